@@ -1,0 +1,189 @@
+"""Input checks shared by every layer.
+
+Every function here raises a ``ValueError`` whose message names the offending argument and says
+what was expected. Nothing is modified in place: each function returns a new array (or a
+read-only view that callers must not write to).
+"""
+
+from __future__ import annotations
+
+import numbers
+from typing import Any
+
+import numpy as np
+
+__all__ = [
+    "check_scores",
+    "check_proba",
+    "check_labels",
+    "check_binary_labels",
+    "check_sample_weight",
+    "check_same_length",
+]
+
+
+def _as_float_array(values: Any, name: str) -> np.ndarray:
+    try:
+        arr = np.asarray(values, dtype=float)
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"`{name}` must be numeric; could not convert it to floats ({exc}).") from exc
+    return arr
+
+
+def check_scores(scores: Any, *, name: str = "scores", ndim: int | None = 1) -> np.ndarray:
+    """Return ``scores`` as a finite float array of the requested dimension.
+
+    ``ndim=1`` expects shape (n,), ``ndim=2`` expects shape (n, k) with k >= 2 and ``None``
+    accepts either.
+    """
+    arr = _as_float_array(scores, name)
+    if ndim is None:
+        if arr.ndim not in (1, 2):
+            raise ValueError(f"`{name}` must be 1-d (n,) or 2-d (n, k); got shape {arr.shape}.")
+    elif ndim == 1:
+        if arr.ndim == 2 and arr.shape[1] == 1:
+            arr = arr[:, 0]
+        if arr.ndim != 1:
+            raise ValueError(
+                f"`{name}` must be 1-d of shape (n,) for a binary map; got shape {arr.shape}."
+            )
+    elif ndim == 2:
+        if arr.ndim != 2 or arr.shape[1] < 2:
+            raise ValueError(f"`{name}` must be 2-d of shape (n, k) with k >= 2; got shape {arr.shape}.")
+    if arr.shape[0] == 0:
+        raise ValueError(f"`{name}` is empty; at least one row is needed.")
+    bad = ~np.isfinite(arr)
+    if bad.any():
+        where = np.argwhere(bad)[0]
+        kind = "NaN" if np.isnan(arr[tuple(where)]) else "infinite"
+        raise ValueError(
+            f"`{name}` contains {int(bad.sum())} {kind} or non-finite value(s) "
+            f"(first at index {tuple(int(i) for i in where)}); scores must be finite."
+        )
+    return arr
+
+
+def check_proba(proba: Any, *, name: str = "y_prob", ndim: int | None = None) -> np.ndarray:
+    """Return ``proba`` as a float array with every entry in [0, 1].
+
+    2-d input must have rows that sum to one (within 1e-6).
+    """
+    arr = _as_float_array(proba, name)
+    if ndim is not None and arr.ndim != ndim:
+        raise ValueError(f"`{name}` must be {ndim}-d; got shape {arr.shape}.")
+    if arr.ndim not in (1, 2):
+        raise ValueError(f"`{name}` must be 1-d (n,) or 2-d (n, k); got shape {arr.shape}.")
+    if arr.shape[0] == 0:
+        raise ValueError(f"`{name}` is empty; at least one row is needed.")
+    if not np.all(np.isfinite(arr)):
+        raise ValueError(f"`{name}` contains NaN or infinite values; probabilities must be finite.")
+    if arr.min() < 0.0 or arr.max() > 1.0:
+        raise ValueError(
+            f"`{name}` must contain probabilities in [0, 1]; got values from {arr.min():.6g} "
+            f"to {arr.max():.6g}."
+        )
+    if arr.ndim == 2:
+        sums = arr.sum(axis=1)
+        if np.max(np.abs(sums - 1.0)) > 1e-6:
+            i = int(np.argmax(np.abs(sums - 1.0)))
+            raise ValueError(
+                f"Each row of `{name}` must sum to one; row {i} sums to {sums[i]:.6g}."
+            )
+    return arr
+
+
+def check_same_length(*pairs: tuple[str, Any]) -> int:
+    """Check that all named arrays have the same number of rows and return it."""
+    lengths = [(name, len(value)) for name, value in pairs if value is not None]
+    n = lengths[0][1]
+    for name, length in lengths[1:]:
+        if length != n:
+            raise ValueError(
+                f"`{name}` has {length} rows but `{lengths[0][0]}` has {n}; lengths must match."
+            )
+    return n
+
+
+def check_labels(y: Any, *, name: str = "y", classes: Any = None, min_classes: int = 2) -> tuple[np.ndarray, np.ndarray]:
+    """Encode labels as integer indices.
+
+    Returns ``(y_index, classes)``. When ``classes`` is given, every label must be one of them
+    (otherwise the unknown labels are named in the error). When it is not, the sorted distinct
+    labels become the classes and there must be at least ``min_classes`` of them.
+    """
+    arr = np.asarray(y)
+    if arr.ndim == 2 and arr.shape[1] == 1:
+        arr = arr[:, 0]
+    if arr.ndim != 1:
+        raise ValueError(f"`{name}` must be 1-d of shape (n,); got shape {arr.shape}.")
+    if arr.shape[0] == 0:
+        raise ValueError(f"`{name}` is empty; at least one row is needed.")
+    if arr.dtype.kind == "f" and np.isnan(arr).any():
+        raise ValueError(f"`{name}` contains NaN; labels must be known for every row.")
+    if classes is None:
+        classes_arr = np.unique(arr)
+        if classes_arr.shape[0] < min_classes:
+            raise ValueError(
+                f"`{name}` contains only {classes_arr.shape[0]} class "
+                f"({classes_arr.tolist()}); at least {min_classes} classes are needed."
+            )
+        return np.searchsorted(classes_arr, arr), classes_arr
+    classes_arr = np.asarray(classes)
+    order = np.argsort(classes_arr, kind="stable")
+    sorted_classes = classes_arr[order]
+    pos = np.searchsorted(sorted_classes, arr)
+    pos_clipped = np.minimum(pos, len(sorted_classes) - 1)
+    known = sorted_classes[pos_clipped] == arr
+    if not np.all(known):
+        unknown = np.unique(arr[~known])[:5].tolist()
+        raise ValueError(
+            f"`{name}` contains labels {unknown} that are not among the known classes "
+            f"{classes_arr.tolist()}."
+        )
+    return order[pos_clipped], classes_arr
+
+
+def check_binary_labels(y: Any, *, name: str = "y", classes: Any = None) -> tuple[np.ndarray, np.ndarray]:
+    """Encode binary labels as 0/1 floats; the second (sorted) class is the positive one.
+
+    Returns ``(y01, classes)``. Raises when there are more or fewer than two distinct labels.
+    """
+    if classes is None:
+        arr = np.asarray(y)
+        if arr.ndim == 2 and arr.shape[1] == 1:
+            arr = arr[:, 0]
+        distinct = np.unique(arr) if arr.ndim == 1 and arr.size else np.asarray([])
+        if distinct.shape[0] > 2:
+            raise ValueError(
+                f"`{name}` has {distinct.shape[0]} distinct labels {distinct[:5].tolist()}; a binary "
+                "map needs exactly two. Use a multiclass map or a calibration wrapper."
+            )
+    idx, classes_arr = check_labels(y, name=name, classes=classes, min_classes=2)
+    if classes_arr.shape[0] != 2:
+        raise ValueError(f"`{name}` must have exactly two classes; got {classes_arr.tolist()}.")
+    return idx.astype(float), classes_arr
+
+
+def check_sample_weight(sample_weight: Any, n: int, *, name: str = "sample_weight") -> np.ndarray:
+    """Return weights as a float array of length ``n`` (ones when ``None``).
+
+    Weights must be finite, non-negative and not all zero.
+    """
+    if sample_weight is None:
+        return np.ones(n, dtype=float)
+    if isinstance(sample_weight, numbers.Number):
+        sw = np.full(n, float(sample_weight))
+    else:
+        sw = _as_float_array(sample_weight, name)
+        if sw.ndim != 1:
+            raise ValueError(f"`{name}` must be 1-d of shape (n,); got shape {sw.shape}.")
+        if sw.shape[0] != n:
+            raise ValueError(f"`{name}` has {sw.shape[0]} entries but the data have {n} rows.")
+        sw = sw.copy()
+    if not np.all(np.isfinite(sw)):
+        raise ValueError(f"`{name}` contains NaN or infinite values.")
+    if np.any(sw < 0):
+        raise ValueError(f"`{name}` must be non-negative; got a minimum of {sw.min():.6g}.")
+    if not np.any(sw > 0):
+        raise ValueError(f"`{name}` is zero for every row; at least one weight must be positive.")
+    return sw

@@ -1,0 +1,127 @@
+"""Common machinery of the calibration maps."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+from sklearn.base import BaseEstimator
+from sklearn.utils.validation import check_is_fitted
+
+from .._validation import (
+    check_binary_labels,
+    check_labels,
+    check_same_length,
+    check_sample_weight,
+    check_scores,
+)
+
+__all__ = ["CalibrationMap"]
+
+
+class CalibrationMap(BaseEstimator):
+    """Base class of every calibration map.
+
+    A map is fitted on held-out scores and labels and turns new scores into probabilities.
+    Binary maps take log-odds of shape (n,) and return positive-class probabilities of shape
+    (n,); multiclass maps take logits or log-probabilities of shape (n, k) and return (n, k)
+    probabilities whose rows sum to one.
+
+    Subclasses implement ``_fit(scores, y, w)`` (``y`` as 0/1 floats for binary maps, integer
+    class indices for multiclass ones; ``w`` the weights, never all zero) and
+    ``_predict(scores)``; the base class validates inputs, stores ``classes_`` and
+    ``n_classes_`` and makes the outputs finite.
+    """
+
+    #: whether the map accepts (n, k) scores with k > 2
+    supports_multiclass: bool = False
+    #: whether the map accepts (n,) log-odds for a binary problem
+    supports_binary: bool = True
+    #: rough number of free parameters, used to prefer simpler maps (``None``: nonparametric)
+    complexity: float = 2.0
+
+    def fit(self, scores: Any, y: Any, sample_weight: Any = None) -> CalibrationMap:
+        """Fit the map.
+
+        Parameters
+        ----------
+        scores : array-like of shape (n,) or (n, k)
+            Held-out log-odds (binary) or logits / log-probabilities (multiclass).
+        y : array-like of shape (n,)
+            True labels.
+        sample_weight : array-like of shape (n,), default=None
+            Non-negative row weights; a weight of 2 counts as two identical rows.
+
+        Returns
+        -------
+        self
+        """
+        s = self._check_scores(scores, fitting=True)
+        check_same_length(("scores", s), ("y", y))
+        w = check_sample_weight(sample_weight, s.shape[0])
+        if s.ndim == 1:
+            y01, classes = check_binary_labels(y, name="y")
+            self.classes_ = classes
+            self.n_classes_ = 2
+            self._fit(s, y01, w)
+        else:
+            idx, classes = check_labels(y, name="y")
+            if classes.shape[0] > s.shape[1]:
+                raise ValueError(
+                    f"`y` has {classes.shape[0]} classes but `scores` has {s.shape[1]} columns."
+                )
+            # Labels name columns by their sorted order; allow classes absent from y only when
+            # they are integer column indices.
+            if classes.shape[0] < s.shape[1]:
+                if classes.dtype.kind in "iu" and classes.min() >= 0 and classes.max() < s.shape[1]:
+                    idx = classes[idx]
+                    classes = np.arange(s.shape[1])
+                else:
+                    raise ValueError(
+                        f"`y` has {classes.shape[0]} classes but `scores` has {s.shape[1]} "
+                        "columns; pass integer column indices as labels when some classes are "
+                        "absent."
+                    )
+            self.classes_ = classes
+            self.n_classes_ = s.shape[1]
+            self._fit(s, idx, w)
+        return self
+
+    def predict(self, scores: Any) -> np.ndarray:
+        """Calibrated probabilities: shape (n,) for binary maps, (n, k) for multiclass ones."""
+        check_is_fitted(self, "classes_")
+        s = self._check_scores(scores, fitting=False)
+        out = np.asarray(self._predict(s), dtype=float)
+        if out.ndim == 1:
+            return np.clip(out, 0.0, 1.0)
+        out = np.clip(out, 0.0, None)
+        return out / out.sum(axis=1, keepdims=True)
+
+    # -- helpers ---------------------------------------------------------------------------
+    def _check_scores(self, scores: Any, *, fitting: bool) -> np.ndarray:
+        s = check_scores(scores, name="scores", ndim=None)
+        if s.ndim == 2 and s.shape[1] == 1:
+            s = s[:, 0]
+        if s.ndim == 1 and not self.supports_binary:
+            raise ValueError(f"{type(self).__name__} needs 2-d scores of shape (n, k).")
+        if s.ndim == 2 and not self.supports_multiclass:
+            raise ValueError(
+                f"{type(self).__name__} is a binary map and needs 1-d log-odds of shape (n,); got "
+                f"shape {s.shape}. For multiclass models use CalibrationWrapper, which applies "
+                "binary maps one-vs-rest."
+            )
+        if not fitting:
+            expected = None if self.n_classes_ == 2 else self.n_classes_
+            got = None if s.ndim == 1 else s.shape[1]
+            if expected != got and not (expected is None and got is None):
+                raise ValueError(
+                    f"`scores` has shape {s.shape} but the map was fitted on "
+                    f"{'1-d log-odds' if expected is None else f'{expected} columns'}."
+                )
+        return s
+
+    def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:  # pragma: no cover
+        raise NotImplementedError
+
+    def _predict(self, scores: np.ndarray) -> np.ndarray:  # pragma: no cover
+        raise NotImplementedError
