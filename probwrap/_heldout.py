@@ -1,0 +1,313 @@
+"""The one place where wrappers obtain held-out predictions.
+
+Every wrapper (calibration, cost policy, prior shift) needs predictions of its inner estimator on
+rows that the estimator did not see during fitting. :class:`HeldOutClassifierBase` provides them:
+
+* by cross-fitting (stratified, shuffled K-fold by default; any scikit-learn splitter or an
+  iterable of ``(train, test)`` index pairs that partitions the rows), after which a clone of the
+  estimator is refitted on all rows for prediction;
+* or, for an estimator wrapped in :class:`sklearn.frozen.FrozenEstimator`, without any fitting:
+  the estimator is already fitted and every row passed to ``fit`` is held-out data to it.
+
+``X`` is handed to the inner estimator untouched (DataFrames keep their column names, sparse
+matrices stay sparse, text pipelines receive strings); only ``y`` and ``sample_weight`` are
+validated here. ``sample_weight`` reaches the inner estimator when its ``fit`` accepts it (or, with
+metadata routing enabled, when it is requested with ``set_fit_request``).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import numbers
+import warnings
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from sklearn import get_config
+from sklearn.base import BaseEstimator, ClassifierMixin, MetaEstimatorMixin, clone
+from sklearn.frozen import FrozenEstimator
+from sklearn.model_selection import StratifiedKFold, check_cv, cross_val_predict
+from sklearn.utils import get_tags
+from sklearn.utils.metadata_routing import MetadataRouter, MethodMapping, process_routing
+from sklearn.utils.multiclass import check_classification_targets
+from sklearn.utils.validation import check_is_fitted, column_or_1d, has_fit_parameter
+
+from ._validation import check_labels, check_sample_weight
+
+__all__ = ["HeldOutClassifierBase", "HeldOutPredictions"]
+
+_RESPONSES = ("predict_proba", "decision_function", "auto")
+
+
+@dataclass
+class HeldOutPredictions:
+    """Held-out predictions of an inner estimator, with what is needed to use them.
+
+    Attributes
+    ----------
+    values : ndarray
+        ``predict_proba`` output of shape (n, k) in ``classes`` order, or ``decision_function``
+        output of shape (n,) (binary) or (n, k).
+    response : str
+        ``"predict_proba"`` or ``"decision_function"``.
+    classes : ndarray of shape (k,)
+        Class labels, in the order of the columns of ``values``.
+    y_index : ndarray of shape (n,)
+        Index of each row's label in ``classes``.
+    sample_weight : ndarray of shape (n,)
+        Validated row weights (ones when none were given).
+    fold : ndarray of shape (n,)
+        Fold whose model predicted each row; ``-1`` for every row of a frozen estimator.
+    n_folds : int
+        Number of folds; 0 for a frozen estimator.
+    estimator : estimator
+        The final fitted estimator (the frozen one as given, or a clone fitted on all rows).
+    """
+
+    values: np.ndarray
+    response: str
+    classes: np.ndarray
+    y_index: np.ndarray
+    sample_weight: np.ndarray
+    fold: np.ndarray
+    n_folds: int
+    estimator: Any
+
+
+def is_frozen(estimator: Any) -> bool:
+    """Whether ``estimator`` is an already-fitted :class:`~sklearn.frozen.FrozenEstimator`."""
+    return isinstance(estimator, FrozenEstimator)
+
+
+def _resolve_response(estimator: Any, response: str) -> str:
+    if response not in _RESPONSES:
+        raise ValueError(f"`response` must be one of {_RESPONSES}; got {response!r}.")
+    has_proba = hasattr(estimator, "predict_proba")
+    has_decision = hasattr(estimator, "decision_function")
+    if response == "auto":
+        if has_proba:
+            return "predict_proba"
+        if has_decision:
+            return "decision_function"
+        raise ValueError(
+            f"`estimator` ({type(estimator).__name__}) has neither predict_proba nor "
+            "decision_function; a probabilistic or scoring classifier is needed."
+        )
+    if response == "predict_proba" and not has_proba:
+        raise ValueError(
+            f"`estimator` ({type(estimator).__name__}) has no predict_proba; this wrapper needs "
+            "probabilities. Wrap it in CalibrationWrapper first, which also accepts "
+            "decision_function scores."
+        )
+    if response == "decision_function" and not has_decision:
+        raise ValueError(f"`estimator` ({type(estimator).__name__}) has no decision_function.")
+    return response
+
+
+class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
+    """Base class of the probwrap wrappers: held-out predictions, routing, tags.
+
+    Subclasses define ``__init__`` with at least ``estimator``, ``cv``, ``n_jobs`` and
+    ``random_state`` and call :meth:`_fit_heldout` from their ``fit``.
+    """
+
+    _heldout_response = "predict_proba"
+
+    # -- fitting -------------------------------------------------------------------------
+    def _make_splitter(self, y: np.ndarray) -> Any:
+        cv = self.cv
+        if cv is None:
+            cv = 5
+        if isinstance(cv, numbers.Integral) and not isinstance(cv, bool):
+            if cv < 2:
+                raise ValueError(f"`cv` must be at least 2 folds; got {cv}.")
+            return StratifiedKFold(n_splits=int(cv), shuffle=True, random_state=self.random_state)
+        try:
+            return check_cv(cv, y, classifier=True)
+        except (TypeError, ValueError) as exc:
+            raise ValueError(
+                "`cv` must be an int >= 2, a scikit-learn splitter or an iterable of "
+                f"(train, test) index pairs; got {cv!r} ({exc})."
+            ) from exc
+
+    def _route_fit_params(self, sample_weight: Any, fit_params: dict) -> tuple[dict, dict]:
+        """Split fit parameters into those for the estimator and those for the splitter."""
+        if get_config().get("enable_metadata_routing", False):
+            routed = process_routing(self, "fit", sample_weight=sample_weight, **fit_params)
+            return dict(routed.estimator.fit), dict(routed.splitter.split)
+        params = dict(fit_params)
+        if sample_weight is not None:
+            if has_fit_parameter(self.estimator, "sample_weight"):
+                params["sample_weight"] = sample_weight
+            else:
+                warnings.warn(
+                    f"`estimator` ({type(self.estimator).__name__}) does not accept "
+                    "sample_weight; it is fitted without weights, and the weights are used only "
+                    "by the wrapper's own step.",
+                    UserWarning,
+                    stacklevel=3,
+                )
+        return params, {}
+
+    def _fit_heldout(
+        self,
+        X: Any,
+        y: Any,
+        sample_weight: Any = None,
+        fit_params: dict | None = None,
+        *,
+        response: str | None = None,
+    ) -> HeldOutPredictions:
+        """Obtain held-out predictions and set ``estimator_``, ``classes_``, ``n_features_in_``.
+
+        Parameters
+        ----------
+        X : array-like, DataFrame, sparse matrix or anything the estimator accepts
+            Passed to the estimator untouched.
+        y : array-like of shape (n,)
+            Labels.
+        sample_weight : array-like of shape (n,), default=None
+            Row weights; passed on to the estimator where it accepts them.
+        fit_params : dict, default=None
+            Further fit parameters (routed with metadata routing when it is enabled).
+        response : {"predict_proba", "decision_function", "auto"}, default=None
+            Which output to collect (``None``: the class attribute ``_heldout_response``).
+        """
+        if self.estimator is None:
+            raise ValueError("`estimator` must be a classifier; got None.")
+        if y is None:
+            raise ValueError(
+                f"{type(self).__name__} requires y to be passed, but the target y is None."
+            )
+        fit_params = dict(fit_params or {})
+        y_arr = column_or_1d(y, warn=True)
+        check_classification_targets(y_arr)
+        n = y_arr.shape[0]
+        sw = check_sample_weight(sample_weight, n) if sample_weight is not None else None
+        response = _resolve_response(self.estimator, response or self._heldout_response)
+
+        if is_frozen(self.estimator):
+            estimator = self.estimator
+            est_classes = np.asarray(estimator.classes_)
+            y_index, _ = check_labels(y_arr, name="y", classes=est_classes, min_classes=1)
+            if np.unique(y_index).shape[0] < 2:
+                raise ValueError(
+                    "`y` contains only 1 class; the held-out rows must contain at least two "
+                    "classes."
+                )
+            values = np.asarray(getattr(estimator, response)(X), dtype=float)
+            fold = np.full(n, -1, dtype=int)
+            n_folds = 0
+            classes = est_classes
+        else:
+            y_index, classes = check_labels(y_arr, name="y")
+            est_params, split_params = self._route_fit_params(
+                sw if sample_weight is not None else None, fit_params
+            )
+            splitter = self._make_splitter(y_arr)
+            with warnings.catch_warnings():
+                # Tiny classes trigger a warning from StratifiedKFold; they are handled below.
+                warnings.filterwarnings("ignore", message="The least populated class")
+                splits = list(splitter.split(X, y_arr, **split_params))
+            fold = np.full(n, -1, dtype=int)
+            for i, (_, test) in enumerate(splits):
+                if np.any(fold[test] >= 0):
+                    raise ValueError(
+                        "`cv` must partition the rows: every row must be in exactly one test "
+                        "fold."
+                    )
+                fold[test] = i
+            if np.any(fold < 0):
+                raise ValueError(
+                    "`cv` must partition the rows: some rows are in no test fold, so they would "
+                    "have no held-out prediction."
+                )
+            n_folds = len(splits)
+            values = self._cross_fit(X, y_arr, splits, est_params, response, classes)
+            estimator = clone(self.estimator).fit(X, y_arr, **est_params)
+
+        values = np.asarray(values, dtype=float)
+        if not np.all(np.isfinite(values)):
+            raise ValueError(
+                f"`estimator` returned NaN or infinite values from {response}; held-out "
+                "predictions must be finite."
+            )
+        self.estimator_ = estimator
+        self.classes_ = np.asarray(classes)
+        if hasattr(estimator, "n_features_in_"):
+            self.n_features_in_ = estimator.n_features_in_
+        if hasattr(estimator, "feature_names_in_"):
+            self.feature_names_in_ = estimator.feature_names_in_
+        return HeldOutPredictions(
+            values=values,
+            response=response,
+            classes=self.classes_,
+            y_index=np.asarray(y_index, dtype=int),
+            sample_weight=sw if sw is not None else np.ones(n, dtype=float),
+            fold=fold,
+            n_folds=n_folds,
+            estimator=estimator,
+        )
+
+    def _cross_fit(self, X, y, splits, est_params, response, classes) -> np.ndarray:
+        with warnings.catch_warnings():
+            warnings.filterwarnings("ignore", message="Number of classes in training fold")
+            values = cross_val_predict(
+                self.estimator,
+                X,
+                y,
+                cv=splits,
+                n_jobs=self.n_jobs,
+                method=response,
+                params=est_params or None,
+            )
+        values = np.asarray(values, dtype=float)
+        if response == "decision_function" and values.ndim == 2:
+            # A class absent from a training fold gets the lowest float from scikit-learn; give
+            # it instead a score far below every other score of that row.
+            missing = values <= np.finfo(float).min / 2
+            if missing.any():
+                present = np.where(missing, np.inf, values)
+                floor = present.min(axis=1, keepdims=True) - 50.0
+                values = np.where(missing, floor, values)
+        return values
+
+    # -- prediction helpers ----------------------------------------------------------------
+    def _inner_output(self, X: Any, response: str) -> np.ndarray:
+        check_is_fitted(self, "estimator_")
+        out = np.asarray(getattr(self.estimator_, response)(X), dtype=float)
+        if not np.all(np.isfinite(out)):
+            raise ValueError(
+                f"The wrapped estimator returned NaN or infinite values from {response} for `X`."
+            )
+        return out
+
+    # -- scikit-learn protocol ---------------------------------------------------------------
+    def get_metadata_routing(self) -> MetadataRouter:
+        """Route ``fit`` metadata to the inner estimator and ``split`` metadata to the splitter."""
+        router = MetadataRouter(owner=type(self).__name__)
+        router.add_self_request(self)
+        router.add(
+            estimator=self.estimator,
+            method_mapping=MethodMapping().add(caller="fit", callee="fit"),
+        )
+        cv = self.cv if self.cv is not None else 5
+        if not isinstance(cv, numbers.Integral):
+            router.add(
+                splitter=check_cv(cv, classifier=True),
+                method_mapping=MethodMapping().add(caller="fit", callee="split"),
+            )
+        else:
+            router.add(
+                splitter=StratifiedKFold(n_splits=max(int(cv), 2)),
+                method_mapping=MethodMapping().add(caller="fit", callee="split"),
+            )
+        return router
+
+    def __sklearn_tags__(self):
+        tags = super().__sklearn_tags__()
+        if self.estimator is not None:
+            inner = get_tags(self.estimator)
+            tags.input_tags = dataclasses.replace(inner.input_tags)
+        return tags
