@@ -224,6 +224,17 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     "have no held-out prediction."
                 )
             n_folds = len(splits)
+            n_classes = classes.shape[0]
+            short = [i for i, (train, _) in enumerate(splits)
+                     if np.unique(y_index[train]).shape[0] < n_classes]
+            if short:
+                warnings.warn(
+                    f"Some classes are absent from the training part of fold(s) {short[:5]}; the "
+                    "models fitted there give those classes a held-out probability of 0 (or the "
+                    "lowest score). Use fewer folds or more rows of the rare classes.",
+                    UserWarning,
+                    stacklevel=3,
+                )
             values = self._cross_fit(X, y_arr, splits, est_params, response, classes)
             estimator = clone(self.estimator).fit(X, y_arr, **est_params)
 
