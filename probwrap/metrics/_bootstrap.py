@@ -1,0 +1,204 @@
+"""Bootstrap confidence intervals for any metric of (y_true, y_prob, sample_weight)."""
+
+from __future__ import annotations
+
+import numbers
+import warnings
+from collections import namedtuple
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from sklearn.utils import check_random_state
+
+from .._validation import check_same_length, check_sample_weight
+
+__all__ = ["BootstrapResult", "ConfidenceInterval", "bootstrap_interval"]
+
+ConfidenceInterval = namedtuple("ConfidenceInterval", ["low", "high"])
+ConfidenceInterval.__doc__ = "Lower and upper end of a two-sided confidence interval."
+
+_METHODS = ("percentile", "basic")
+
+
+@dataclass(frozen=True, eq=False)
+class BootstrapResult:
+    """Outcome of :func:`bootstrap_interval`, laid out like SciPy's bootstrap result.
+
+    Attributes
+    ----------
+    statistic : float or ndarray
+        The metric on the full data.
+    confidence_interval : ConfidenceInterval
+        Named tuple ``(low, high)``.
+    standard_error : float or ndarray
+        Standard deviation (``ddof=1``) of the bootstrap distribution.
+    bootstrap_distribution : ndarray
+        The metric on each usable resample; resamples along the last axis.
+    method : str
+        ``"percentile"`` or ``"basic"``.
+    confidence_level : float
+        Two-sided coverage of the interval.
+    n_failed : int
+        Resamples on which the metric raised a ``ValueError`` or was not finite (for example a
+        resample with a single class for a metric needing both); they are left out, with a
+        warning.
+    """
+
+    statistic: float | np.ndarray
+    confidence_interval: ConfidenceInterval
+    standard_error: float | np.ndarray
+    bootstrap_distribution: np.ndarray
+    method: str
+    confidence_level: float
+    n_failed: int
+
+
+def _scalar_or_array(values: np.ndarray) -> float | np.ndarray:
+    return float(values) if values.ndim == 0 else values
+
+
+def bootstrap_interval(
+    metric: Callable[..., Any],
+    y_true: Any,
+    y_prob: Any,
+    *,
+    sample_weight: Any = None,
+    n_resamples: int = 1000,
+    confidence_level: float = 0.95,
+    method: str = "percentile",
+    random_state: Any = None,
+    **metric_kwargs: Any,
+) -> BootstrapResult:
+    """Bootstrap confidence interval for a metric of labels and probabilities.
+
+    Rows are resampled with replacement (Efron 1979), keeping each label with its forecast. A
+    resample is handed to ``metric`` as weights, not as copied rows: a row drawn ``c`` times gets
+    weight ``c * sample_weight``. Because every metric in :mod:`probwrap.metrics` treats weight
+    ``c`` exactly as ``c`` copies, this equals evaluating the metric on the resampled rows, and it
+    keeps the full label set visible to the metric in every resample. Each row (with its weight)
+    is one resampling unit; weighted data are therefore resampled row by row, not in proportion
+    to their weights.
+
+    Resample ``r`` draws its row indices as ``random_state.randint(0, n, size=n)`` with
+    ``random_state`` made by :func:`sklearn.utils.check_random_state`, one resample after another.
+
+    Parameters
+    ----------
+    metric : callable
+        ``metric(y_true, y_prob, sample_weight=..., **metric_kwargs)`` returning a number or a
+        1-d array of numbers (for example :func:`net_benefit` at several thresholds). For a
+        result object, wrap it, e.g. ``lambda y, p, sample_weight=None:
+        calibration_slope_intercept(y, p, sample_weight=sample_weight).slope``.
+    y_true, y_prob : array-like with n rows
+        Passed to ``metric`` unchanged (as arrays).
+    sample_weight : array-like of shape (n,), optional
+        Row weights, multiplied by the resample counts.
+    n_resamples : int, default=1000
+        Number of resamples, at least 2.
+    confidence_level : float, default=0.95
+        Two-sided coverage, in (0, 1).
+    method : {"percentile", "basic"}, default="percentile"
+        ``"percentile"``: the ``(1 - level)/2`` and ``(1 + level)/2`` quantiles (linear
+        interpolation) of the bootstrap distribution. ``"basic"``: those quantiles reflected
+        about the statistic, ``(2 s - q_high, 2 s - q_low)``. Both as in
+        ``scipy.stats.bootstrap``.
+    random_state : int, RandomState instance or None
+        Seed for the resampling.
+    **metric_kwargs
+        Passed on to ``metric`` (``n_bins=``, ``threshold=``, ...).
+
+    Returns
+    -------
+    BootstrapResult
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.metrics import bootstrap_interval, brier_score
+    >>> rng = np.random.default_rng(0)
+    >>> p = rng.uniform(size=200)
+    >>> y = (rng.uniform(size=200) < p).astype(int)
+    >>> res = bootstrap_interval(brier_score, y, p, n_resamples=200, random_state=0)
+    >>> bool(res.confidence_interval.low < res.statistic < res.confidence_interval.high)
+    True
+    """
+    if not callable(metric):
+        raise ValueError(f"`metric` must be callable; got {metric!r}.")
+    if (
+        isinstance(n_resamples, bool)
+        or not isinstance(n_resamples, numbers.Integral)
+        or n_resamples < 2
+    ):
+        raise ValueError(f"`n_resamples` must be a whole number >= 2; got {n_resamples!r}.")
+    if (
+        isinstance(confidence_level, bool)
+        or not isinstance(confidence_level, numbers.Real)
+        or not 0.0 < confidence_level < 1.0
+    ):
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+    if method not in _METHODS:
+        raise ValueError(f"`method` must be one of {list(_METHODS)}; got {method!r}.")
+    y_arr = np.asarray(y_true)
+    p_arr = np.asarray(y_prob)
+    n = check_same_length(("y_true", y_arr), ("y_prob", p_arr))
+    base_w = check_sample_weight(sample_weight, n)
+    statistic = np.asarray(
+        metric(y_arr, p_arr, sample_weight=sample_weight, **metric_kwargs), dtype=float
+    )
+    if statistic.ndim > 1 or not np.all(np.isfinite(statistic)):
+        raise ValueError(
+            "`metric` must return a finite number or 1-d array of finite numbers; got "
+            f"{statistic!r}."
+        )
+    rng = check_random_state(random_state)
+    dist = np.empty((int(n_resamples),) + statistic.shape)
+    ok = np.ones(int(n_resamples), dtype=bool)
+    first_error = None
+    for r in range(int(n_resamples)):
+        counts = np.bincount(rng.randint(0, n, size=n), minlength=n)
+        try:
+            value = np.asarray(
+                metric(y_arr, p_arr, sample_weight=counts * base_w, **metric_kwargs), dtype=float
+            )
+        except ValueError as exc:
+            ok[r] = False
+            first_error = first_error or str(exc)
+            continue
+        if value.shape != statistic.shape or not np.all(np.isfinite(value)):
+            ok[r] = False
+            first_error = first_error or f"non-finite or mis-shaped value {value!r}"
+            continue
+        dist[r] = value
+    n_failed = int(np.count_nonzero(~ok))
+    if n_failed > n_resamples - 2:
+        raise ValueError(
+            f"`metric` could be evaluated on only {n_resamples - n_failed} of {n_resamples} "
+            f"resamples (first problem: {first_error}); no interval can be formed."
+        )
+    if n_failed:
+        warnings.warn(
+            f"{n_failed} of {n_resamples} resamples were left out because `metric` could not be "
+            f"evaluated on them (first problem: {first_error}).",
+            UserWarning,
+            stacklevel=2,
+        )
+    dist = dist[ok]
+    alpha = (1.0 - float(confidence_level)) / 2.0
+    q_low, q_high = np.quantile(dist, [alpha, 1.0 - alpha], axis=0)
+    if method == "percentile":
+        low, high = q_low, q_high
+    else:
+        low, high = 2.0 * statistic - q_high, 2.0 * statistic - q_low
+    se = np.std(dist, ddof=1, axis=0)
+    return BootstrapResult(
+        statistic=_scalar_or_array(statistic),
+        confidence_interval=ConfidenceInterval(_scalar_or_array(np.asarray(low)),
+                                               _scalar_or_array(np.asarray(high))),
+        standard_error=_scalar_or_array(np.asarray(se)),
+        bootstrap_distribution=np.moveaxis(dist, 0, -1),
+        method=method,
+        confidence_level=float(confidence_level),
+        n_failed=n_failed,
+    )

@@ -1,0 +1,178 @@
+"""Private input handling shared by the metrics.
+
+Every metric takes ``y_true`` (labels), ``y_prob`` (probabilities) and an optional
+``sample_weight``. The helpers here turn them into float arrays that the metrics can use
+directly, with the shared checks of :mod:`probwrap._validation` doing the work and naming the
+offending argument in every error.
+"""
+
+from __future__ import annotations
+
+import numbers
+import warnings
+from typing import Any
+
+import numpy as np
+
+from .._validation import (
+    check_binary_labels,
+    check_labels,
+    check_proba,
+    check_same_length,
+    check_sample_weight,
+)
+
+__all__ = [
+    "STRATEGIES",
+    "binary_targets",
+    "check_n_bins",
+    "check_strategy",
+    "class_indices",
+    "prepare_any",
+    "prepare_binary",
+    "warn_floored",
+]
+
+STRATEGIES = ("uniform", "quantile")
+
+
+def _label_array(y_true: Any) -> np.ndarray:
+    arr = np.asarray(y_true)
+    if arr.ndim == 2 and arr.shape[1] == 1:
+        arr = arr[:, 0]
+    if arr.ndim != 1:
+        raise ValueError(f"`y_true` must be 1-d of shape (n,); got shape {arr.shape}.")
+    if arr.shape[0] == 0:
+        raise ValueError("`y_true` is empty; at least one row is needed.")
+    if arr.dtype.kind == "f" and np.isnan(arr).any():
+        raise ValueError("`y_true` contains NaN; labels must be known for every row.")
+    return arr
+
+
+def _distinct_labels(labels: Any, n_expected: int, what: str) -> np.ndarray:
+    arr = np.asarray(labels)
+    if arr.ndim != 1 or arr.shape[0] != n_expected:
+        raise ValueError(
+            f"`labels` must list {n_expected} classes ({what}); got {np.asarray(labels).tolist()!r}."
+        )
+    if np.unique(arr).shape[0] != n_expected:
+        raise ValueError(f"`labels` must not repeat a class; got {arr.tolist()!r}.")
+    return arr
+
+
+def binary_targets(y_true: Any, labels: Any = None) -> np.ndarray:
+    """Return 0/1 floats for binary labels; the second sorted label (or ``labels[1]``) is 1.
+
+    A ``y_true`` with a single distinct value is accepted when that value is 0 or 1 (or a
+    boolean), since its meaning is then clear; any other single label needs ``labels=``.
+    """
+    arr = _label_array(y_true)
+    if labels is not None:
+        classes = _distinct_labels(labels, 2, "[negative, positive]")
+        idx, _ = check_labels(arr, name="y_true", classes=classes)
+        return idx.astype(float)
+    distinct = np.unique(arr)
+    if distinct.shape[0] == 1:
+        value = distinct[0]
+        if arr.dtype.kind in "biuf" and value in (0, 1):
+            return (arr == 1).astype(float)
+        raise ValueError(
+            f"`y_true` holds the single label {value!r}; it cannot tell which class is positive. "
+            "Pass labels=[negative, positive]."
+        )
+    y01, _ = check_binary_labels(arr, name="y_true")
+    return y01
+
+
+def class_indices(y_true: Any, n_classes: int, labels: Any = None) -> np.ndarray:
+    """Return integer column indices in ``0..n_classes-1`` for the labels of 2-d ``y_prob``."""
+    arr = _label_array(y_true)
+    if labels is not None:
+        classes = _distinct_labels(labels, n_classes, "one per column of `y_prob`, in order")
+        idx, _ = check_labels(arr, name="y_true", classes=classes)
+        return np.asarray(idx, dtype=np.intp)
+    if arr.dtype.kind == "b":
+        arr = arr.astype(np.intp)
+    if arr.dtype.kind not in "iuf":
+        raise ValueError(
+            f"`y_true` holds labels of type {arr.dtype}; with 2-d `y_prob` the labels must be "
+            "column indices 0..k-1, or pass labels= listing the class of each column."
+        )
+    if arr.dtype.kind == "f" and np.any(arr != np.round(arr)):
+        raise ValueError(
+            "`y_true` must hold whole-number column indices 0..k-1 for 2-d `y_prob`; got "
+            "fractional values. Pass labels= if the classes are not column indices."
+        )
+    if arr.min() < 0 or arr.max() >= n_classes:
+        raise ValueError(
+            f"`y_true` must hold column indices 0..{n_classes - 1} for `y_prob` with {n_classes} "
+            f"columns; got values from {arr.min()} to {arr.max()}. Pass labels= to name classes."
+        )
+    return arr.astype(np.intp)
+
+
+def _prepare_proba(y_true: Any, y_prob: Any, sample_weight: Any) -> tuple[np.ndarray, np.ndarray]:
+    p = check_proba(y_prob, name="y_prob")
+    if p.ndim == 2 and p.shape[1] == 1:
+        p = p[:, 0]
+    if p.ndim == 2 and p.shape[1] < 2:
+        raise ValueError(f"`y_prob` must have at least two columns when 2-d; got {p.shape}.")
+    n = check_same_length(("y_prob", p), ("y_true", np.asarray(y_true)))
+    w = check_sample_weight(sample_weight, n)
+    return p, w
+
+
+def prepare_binary(
+    y_true: Any, y_prob: Any, sample_weight: Any, labels: Any = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Validate a binary problem: returns ``(y01, p, w)`` with ``p`` the positive-class column.
+
+    ``y_prob`` may be 1-d (positive-class probabilities) or two columns (the second is used).
+    """
+    p, w = _prepare_proba(y_true, y_prob, sample_weight)
+    if p.ndim == 2:
+        if p.shape[1] != 2:
+            raise ValueError(
+                f"`y_prob` must be 1-d positive-class probabilities (or two columns) for this "
+                f"binary metric; got shape {p.shape}."
+            )
+        y01 = class_indices(y_true, 2, labels).astype(float)
+        return y01, p[:, 1], w
+    return binary_targets(y_true, labels), p, w
+
+
+def prepare_any(
+    y_true: Any, y_prob: Any, sample_weight: Any, labels: Any = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Validate a binary (1-d ``y_prob``) or multiclass (2-d ``y_prob``) problem.
+
+    Returns ``(y, p, w)``: for 1-d ``p``, ``y`` is 0/1 floats; for 2-d ``p``, ``y`` holds
+    integer column indices.
+    """
+    p, w = _prepare_proba(y_true, y_prob, sample_weight)
+    if p.ndim == 1:
+        return binary_targets(y_true, labels), p, w
+    return class_indices(y_true, p.shape[1], labels), p, w
+
+
+def check_n_bins(n_bins: Any, name: str = "n_bins") -> int:
+    if isinstance(n_bins, bool) or not isinstance(n_bins, numbers.Integral) or n_bins < 1:
+        raise ValueError(f"`{name}` must be a whole number >= 1; got {n_bins!r}.")
+    return int(n_bins)
+
+
+def check_strategy(strategy: Any) -> str:
+    if strategy not in STRATEGIES:
+        raise ValueError(f"`strategy` must be one of {list(STRATEGIES)}; got {strategy!r}.")
+    return str(strategy)
+
+
+def warn_floored(n_floored: int, floor: float, what: str) -> None:
+    """Warn that ``n_floored`` rows were moved to ``floor`` (never silently)."""
+    if n_floored:
+        warnings.warn(
+            f"{n_floored} row(s) {what}; they were moved to {floor:.3g} (see the `clip` note in "
+            "the docstring).",
+            UserWarning,
+            stacklevel=3,
+        )
