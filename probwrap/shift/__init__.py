@@ -1,0 +1,41 @@
+"""Prior (label) shift: re-weight posteriors to new class priors and estimate those priors.
+
+Array core: functions and small objects on posteriors, labels and weights; nothing here knows
+about scikit-learn estimators. :class:`probwrap.PriorShiftWrapper` is the estimator face.
+"""
+
+from ._adjust import adjust_to_prior, check_prior, project_to_simplex, shift_cutoff
+from ._calibration import BiasCorrectedScaling
+from ._estimate import (
+    PriorEstimate,
+    ShiftTestResult,
+    acc_prior,
+    bbse_prior,
+    binomial_interval,
+    em_prior,
+    heldout_confusion,
+    prior_log_likelihood,
+    shift_test,
+)
+from ._estimator import CALIBRATIONS, PRIOR_METHODS, PriorEstimator, prior_by_batch
+
+__all__ = [
+    "BiasCorrectedScaling",
+    "CALIBRATIONS",
+    "PRIOR_METHODS",
+    "PriorEstimate",
+    "PriorEstimator",
+    "ShiftTestResult",
+    "acc_prior",
+    "adjust_to_prior",
+    "bbse_prior",
+    "binomial_interval",
+    "check_prior",
+    "em_prior",
+    "heldout_confusion",
+    "prior_by_batch",
+    "prior_log_likelihood",
+    "project_to_simplex",
+    "shift_cutoff",
+    "shift_test",
+]
