@@ -72,8 +72,14 @@ def binary_targets(y_true: Any, labels: Any = None) -> np.ndarray:
         idx, _ = check_labels(arr, name="y_true", classes=classes)
         return idx.astype(float)
     distinct = np.unique(arr)
+    if distinct.shape[0] > 2:
+        raise ValueError(
+            f"`y_true` has {distinct.shape[0]} distinct labels {distinct[:5].tolist()}; 1-d "
+            "`y_prob` (positive-class probabilities) needs exactly two. Pass 2-d class "
+            "probabilities of shape (n, k) for more classes."
+        )
     if distinct.shape[0] == 1:
-        value = distinct[0]
+        value = distinct[0].item() if hasattr(distinct[0], "item") else distinct[0]
         if arr.dtype.kind in "biuf" and value in (0, 1):
             return (arr == 1).astype(float)
         raise ValueError(
