@@ -1,11 +1,24 @@
 """Calibration maps (array core): fitted on held-out scores, they return probabilities."""
 
-from ._base import CalibrationMap
+from ._base import NONPARAMETRIC, CalibrationMap
+from ._beta import BetaMap
+from ._binning import BinningMap
+from ._isotonic import IsotonicMap
 from ._logodds import DEFAULT_CLIP, log_odds_to_proba, proba_to_log_odds, proba_to_log_proba
+from ._platt import PlattMap
+from ._temperature import TemperatureMap
+from ._venn_abers import VennAbersMap
 
 __all__ = [
+    "BetaMap",
+    "BinningMap",
     "CalibrationMap",
     "DEFAULT_CLIP",
+    "IsotonicMap",
+    "NONPARAMETRIC",
+    "PlattMap",
+    "TemperatureMap",
+    "VennAbersMap",
     "log_odds_to_proba",
     "proba_to_log_odds",
     "proba_to_log_proba",

@@ -16,7 +16,10 @@ from .._validation import (
     check_scores,
 )
 
-__all__ = ["CalibrationMap"]
+__all__ = ["CalibrationMap", "NONPARAMETRIC"]
+
+#: ``complexity`` of maps whose number of free parameters grows with the data.
+NONPARAMETRIC = 1e9
 
 
 class CalibrationMap(BaseEstimator):
@@ -37,7 +40,8 @@ class CalibrationMap(BaseEstimator):
     supports_multiclass: bool = False
     #: whether the map accepts (n,) log-odds for a binary problem
     supports_binary: bool = True
-    #: rough number of free parameters, used to prefer simpler maps (``None``: nonparametric)
+    #: rough number of free parameters, used to prefer simpler maps; nonparametric maps use
+    #: :data:`NONPARAMETRIC` (a very large number) so that any parametric map counts as simpler
     complexity: float = 2.0
 
     def fit(self, scores: Any, y: Any, sample_weight: Any = None) -> CalibrationMap:
@@ -57,12 +61,16 @@ class CalibrationMap(BaseEstimator):
         self
         """
         s = self._check_scores(scores, fitting=True)
+        y = np.asarray(y)
+        if y.ndim == 0:
+            raise ValueError(f"`y` must be 1-d of shape (n,); got a scalar {y!r}.")
         check_same_length(("scores", s), ("y", y))
         w = check_sample_weight(sample_weight, s.shape[0])
         if s.ndim == 1:
             y01, classes = check_binary_labels(y, name="y")
             self.classes_ = classes
             self.n_classes_ = 2
+            self.n_score_columns_ = 1
             self._fit(s, y01, w)
         else:
             idx, classes = check_labels(y, name="y")
@@ -84,6 +92,7 @@ class CalibrationMap(BaseEstimator):
                     )
             self.classes_ = classes
             self.n_classes_ = s.shape[1]
+            self.n_score_columns_ = s.shape[1]
             self._fit(s, idx, w)
         return self
 
@@ -103,20 +112,23 @@ class CalibrationMap(BaseEstimator):
         if s.ndim == 2 and s.shape[1] == 1:
             s = s[:, 0]
         if s.ndim == 1 and not self.supports_binary:
-            raise ValueError(f"{type(self).__name__} needs 2-d scores of shape (n, k).")
+            raise ValueError(
+                f"`scores` must be 2-d of shape (n, k) for {type(self).__name__}; got shape "
+                f"{s.shape}."
+            )
         if s.ndim == 2 and not self.supports_multiclass:
             raise ValueError(
-                f"{type(self).__name__} is a binary map and needs 1-d log-odds of shape (n,); got "
-                f"shape {s.shape}. For multiclass models use CalibrationWrapper, which applies "
-                "binary maps one-vs-rest."
+                f"`scores` must be 1-d log-odds of shape (n,) for {type(self).__name__}, a binary "
+                f"map; got shape {s.shape}. For multiclass models use CalibrationWrapper, which "
+                "applies binary maps one-vs-rest."
             )
         if not fitting:
-            expected = None if self.n_classes_ == 2 else self.n_classes_
-            got = None if s.ndim == 1 else s.shape[1]
-            if expected != got and not (expected is None and got is None):
+            expected = self.n_score_columns_
+            got = 1 if s.ndim == 1 else s.shape[1]
+            if expected != got:
                 raise ValueError(
                     f"`scores` has shape {s.shape} but the map was fitted on "
-                    f"{'1-d log-odds' if expected is None else f'{expected} columns'}."
+                    f"{'1-d log-odds' if expected == 1 else f'{expected} columns'}."
                 )
         return s
 

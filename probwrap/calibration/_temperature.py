@@ -1,0 +1,111 @@
+"""Temperature scaling (Guo, Pleiss, Sun & Weinberger 2017)."""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+from scipy.optimize import minimize_scalar
+from scipy.special import expit, log_softmax, softmax
+
+from ._base import CalibrationMap
+
+__all__ = ["TemperatureMap"]
+
+#: the search for log(T) spans this many natural-log units either side of the score scale
+_LOG_SPAN = 16.0
+
+
+def _temperature_loss(
+    log_t: float, scores: np.ndarray, y: np.ndarray, wn: np.ndarray
+) -> float:
+    """Weighted mean log loss of the scores divided by ``exp(log_t)``."""
+    inv_t = np.exp(-log_t)
+    if scores.ndim == 1:
+        eta = scores * inv_t
+        return float(wn @ (np.logaddexp(0.0, eta) - y * eta))
+    logp = log_softmax(scores * inv_t, axis=1)
+    return float(-(wn @ logp[np.arange(scores.shape[0]), y.astype(np.intp)]))
+
+
+class TemperatureMap(CalibrationMap):
+    """Temperature scaling: divide the log-odds (or logits) by one fitted temperature ``T > 0``.
+
+    Binary: ``q = sigmoid(s / T)`` for log-odds ``s`` of shape (n,). Multiclass:
+    ``q = softmax(z / T)`` row by row for logits or log-probabilities ``z`` of shape (n, k).
+    ``T > 1`` softens over-confident scores, ``T < 1`` sharpens them; the order of the scores
+    (and so the arg-max class) never changes.
+
+    ``T`` minimises the weighted log loss, searched on ``log T`` by bounded Brent minimisation
+    (SciPy ``minimize_scalar``, absolute tolerance 1e-10 on ``log T``). The loss is convex in
+    ``1 / T``, so the minimum is unique. The search covers ``exp(+-16)`` times the
+    root-mean-square score; when the best ``T`` lies at an end (scores unrelated to the labels,
+    or classes separated perfectly) the map warns.
+
+    Attributes
+    ----------
+    temperature_ : float
+        Fitted temperature ``T``.
+    classes_ : ndarray
+        The labels, in column order.
+
+    References
+    ----------
+    C. Guo, G. Pleiss, Y. Sun and K. Q. Weinberger (2017), "On calibration of modern neural
+    networks", ICML, section 4.2.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.calibration import TemperatureMap
+    >>> z = np.array([[4.0, 0.0, 0.0], [0.0, 4.0, 0.0], [0.0, 0.0, 4.0], [4.0, 0.0, 0.0]])
+    >>> m = TemperatureMap().fit(z, [0, 1, 2, 1])
+    >>> round(m.temperature_, 4)
+    2.2324
+
+    Three rows are right and one is wrong, so the best confidence is 3/4: ``4 / T = ln 6``.
+
+    >>> m.predict(z[:1]).round(3)
+    array([[0.75 , 0.125, 0.125]])
+    """
+
+    supports_multiclass = True
+    complexity = 1.0
+
+    def __init__(self) -> None:
+        pass
+
+    def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
+        wn = w / w.sum()
+        if scores.ndim == 1:
+            square = scores**2
+        else:
+            square = np.mean((scores - scores.mean(axis=1, keepdims=True)) ** 2, axis=1)
+        scale = float(np.sqrt(wn @ square))
+        if scale == 0.0:
+            # every score is the same (per row): the temperature has no effect on the output
+            self.temperature_ = 1.0
+            return
+        lo, hi = np.log(scale) - _LOG_SPAN, np.log(scale) + _LOG_SPAN
+        res = minimize_scalar(
+            _temperature_loss,
+            bounds=(lo, hi),
+            args=(scores, y, wn),
+            method="bounded",
+            options={"xatol": 1e-10, "maxiter": 2000},
+        )
+        log_t = float(res.x)
+        if min(log_t - lo, hi - log_t) < 1e-3:
+            warnings.warn(
+                "TemperatureMap: the best temperature lies at the end of the search range "
+                f"(T = {np.exp(log_t):.3g}); the scores are either unrelated to the labels or "
+                "separate the classes perfectly.",
+                UserWarning,
+                stacklevel=3,
+            )
+        self.temperature_ = float(np.exp(log_t))
+
+    def _predict(self, scores: np.ndarray) -> np.ndarray:
+        if scores.ndim == 1:
+            return expit(scores / self.temperature_)
+        return softmax(scores / self.temperature_, axis=1)
