@@ -124,8 +124,7 @@ class VennAbersMap(CalibrationMap):
     ``sample_weight``); a test score equal to a calibration score joins that tie group.
     ``p0 <= p1``, and the width ``p1 - p0`` shows how much the calibration data pin the
     probability down. ``predict`` merges the pair into one probability,
-    ``p1 / (1 - p0 + p1)``, the choice that minimises the worse-case log loss (their
-    section 4).
+    ``p1 / (1 - p0 + p1)``, the paper's merge for log loss.
 
     Efficiency: nothing is refitted per test point. After one sort, the values for every
     possible insertion (at each distinct calibration score and in each gap between two) are
