@@ -1,0 +1,429 @@
+"""Exact empirical cutoff search for binary decisions: one sort plus cumulative sums.
+
+The positive (costly) action is taken for a row when its score is strictly greater than the
+cutoff. Every distinct score is a candidate boundary; rows with equal scores always receive the
+same action. With the scores sorted once, the total cost of "act on every row whose score is above
+the i-th distinct score" is a cumulative sum, so the whole cost-versus-cutoff curve costs
+O(n log n) and no grid is involved.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .._validation import check_same_length, check_sample_weight, check_scores
+from ._costs import _resolve_costs
+
+__all__ = [
+    "CutoffSearchResult",
+    "CutoffInterval",
+    "search_cutoff",
+    "capacity_cutoff",
+    "cutoff_interval",
+    "check_capacity",
+]
+
+
+@dataclass(frozen=True)
+class CutoffSearchResult:
+    """Outcome of :func:`search_cutoff`: the whole cost curve and its minimiser.
+
+    Attributes
+    ----------
+    cutoff : float
+        Chosen cutoff: the middle of the optimal interval ``interval``.
+    cost : float
+        Mean (weighted) cost per row at ``cutoff``.
+    interval : tuple of float
+        ``(low, high)``: every cutoff in ``[low, high)`` gives the minimal cost on these rows.
+    flat : bool
+        True when the optimum spans more than one distinct decision (the curve is flat there, so
+        the data do not pin the cutoff down more finely than ``interval``).
+    cutoffs : ndarray of shape (m + 1,)
+        One representative cutoff per distinct decision, ascending (``m`` distinct scores).
+    costs : ndarray of shape (m + 1,)
+        Mean cost per row at each of ``cutoffs``.
+    flagged_share : ndarray of shape (m + 1,)
+        Weighted share of rows given the positive action at each of ``cutoffs``.
+    admissible : ndarray of shape (m + 1,)
+        Whether each decision respects ``capacity`` (all True without a capacity).
+    capacity : float or None
+        The capacity that was imposed.
+    """
+
+    cutoff: float
+    cost: float
+    interval: tuple[float, float]
+    flat: bool
+    cutoffs: np.ndarray
+    costs: np.ndarray
+    flagged_share: np.ndarray
+    admissible: np.ndarray
+    capacity: float | None
+
+
+@dataclass(frozen=True)
+class CutoffInterval:
+    """Uncertainty of a tuned cutoff.
+
+    Attributes
+    ----------
+    low, high : float
+        Percentile bootstrap interval of the cutoff (rows resampled with replacement and the
+        search repeated on each resample).
+    confidence_level : float
+        Coverage aimed at by ``(low, high)``.
+    bootstrap_cutoffs : ndarray of shape (n_resamples,)
+        The cutoff found on each resample.
+    fold_cutoffs : ndarray of shape (n_folds,)
+        The cutoff found on the held-out rows of each fold separately (empty for a frozen
+        estimator); their spread shows how much the cutoff moves between folds.
+    fold_low, fold_high : float
+        Smallest and largest of ``fold_cutoffs`` (NaN-free: equal to ``low`` / ``high`` when there
+        are no folds).
+    """
+
+    low: float
+    high: float
+    confidence_level: float
+    bootstrap_cutoffs: np.ndarray
+    fold_cutoffs: np.ndarray
+    fold_low: float
+    fold_high: float
+
+
+def check_capacity(capacity: Any, *, name: str = "capacity") -> float | None:
+    """Validate a capacity (share of rows) in (0, 1]; ``None`` passes through."""
+    if capacity is None:
+        return None
+    try:
+        value = float(capacity)
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {capacity!r}.") from exc
+    if isinstance(capacity, bool) or not (0.0 < value <= 1.0):
+        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {capacity!r}.")
+    return value
+
+
+def _check_bounds(score_bounds: Any) -> tuple[float, float] | None:
+    if score_bounds is None:
+        return None
+    try:
+        lo, hi = (float(v) for v in score_bounds)
+    except (TypeError, ValueError) as exc:
+        raise ValueError(
+            f"`score_bounds` must be a pair (low, high) of numbers; got {score_bounds!r}."
+        ) from exc
+    if not lo < hi:
+        raise ValueError(f"`score_bounds` must satisfy low < high; got {score_bounds!r}.")
+    return lo, hi
+
+
+def _binary_targets(y: Any, n: int) -> np.ndarray:
+    arr = np.asarray(y)
+    if arr.ndim != 1:
+        raise ValueError(f"`y` must be 1-d of shape (n,); got shape {arr.shape}.")
+    if arr.dtype.kind == "b":
+        arr = arr.astype(int)
+    if arr.dtype.kind not in "iuf" or not np.all(np.isin(arr, (0, 1))):
+        raise ValueError(
+            "`y` must hold binary targets coded 0 (negative) and 1 (positive); got values "
+            f"{np.unique(arr)[:5].tolist()}."
+        )
+    return arr.astype(np.intp)
+
+
+def _row_costs(matrix: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Cost of the negative action (c0) and the positive action (c1) for each row."""
+    if matrix.ndim == 2:
+        return matrix[y, 0], matrix[y, 1]
+    rows = np.arange(y.shape[0])
+    return matrix[rows, y, 0], matrix[rows, y, 1]
+
+
+class _SortedRows:
+    """Scores sorted once, with the boundaries of groups of equal scores."""
+
+    def __init__(self, scores: np.ndarray, score_bounds: tuple[float, float] | None) -> None:
+        self.order = np.argsort(scores)
+        ss = scores[self.order]
+        last = np.empty(ss.shape[0], dtype=bool)
+        np.not_equal(ss[1:], ss[:-1], out=last[:-1])
+        last[-1] = True
+        self.ends = np.flatnonzero(last)
+        u = ss[self.ends]
+        m = u.shape[0]
+        gap = (u[-1] - u[0]) / (m - 1) if m > 1 else 1.0
+        lo_ext = u[0] - gap
+        hi_ext = u[-1] + gap
+        if score_bounds is not None:
+            if score_bounds[0] < u[0]:
+                lo_ext = score_bounds[0]
+            if score_bounds[1] > u[-1]:
+                hi_ext = score_bounds[1]
+        # Decision j (j = 0..m) is "positive action for rows scoring above lower[j]"; any cutoff
+        # in [lower[j], upper[j]) produces it.
+        self.lower = np.concatenate([[lo_ext], u])
+        self.upper = np.concatenate([u, [hi_ext]])
+        self.mid = 0.5 * (self.lower + self.upper)
+
+    def curve(self, c0w: np.ndarray, c1w: np.ndarray, w: np.ndarray) -> tuple:
+        """Total cost and flagged weight of every decision, from row costs already weighted."""
+        o = self.order
+        total = np.empty(self.ends.shape[0] + 1)
+        total[0] = c1w.sum()
+        cum = np.cumsum(c0w[o] - c1w[o])
+        total[1:] = total[0] + cum[self.ends]
+        cw = np.cumsum(w[o])
+        weight = cw[-1]
+        flagged = np.empty_like(total)
+        flagged[0] = weight
+        flagged[1:] = weight - cw[self.ends]
+        flagged[-1] = 0.0
+        return total, flagged, weight
+
+
+def _pick_optimum(
+    cost: np.ndarray, lower: np.ndarray, upper: np.ndarray, admissible: np.ndarray
+) -> tuple[int, float, float, float, bool]:
+    """Middle of the widest run of minimal-cost decisions.
+
+    Returns ``(index, value, low, high, flat)`` where ``index`` is the decision that contains
+    the chosen value.
+    """
+    c = np.where(admissible, cost, np.inf)
+    best = c.min()
+    scale = np.max(np.abs(cost[admissible])) if admissible.any() else 1.0
+    tol = 1e-9 * max(scale, 1e-300)
+    opt = np.flatnonzero(c <= best + tol)
+    breaks = np.flatnonzero(np.diff(opt) > 1)
+    starts = opt[np.concatenate([[0], breaks + 1])]
+    stops = opt[np.concatenate([breaks, [opt.shape[0] - 1]])]
+    widths = upper[stops] - lower[starts]
+    r = int(np.argmax(widths))
+    lo, hi = float(lower[starts[r]]), float(upper[stops[r]])
+    value = 0.5 * (lo + hi)
+    index = int(np.searchsorted(upper, value, side="right"))
+    index = min(max(index, int(starts[r])), int(stops[r]))
+    return index, value, lo, hi, bool(stops[r] > starts[r])
+
+
+def _prepare(scores, y, costs, sample_weight):
+    s = check_scores(scores, name="scores", ndim=1)
+    n = check_same_length(("scores", s), ("y", np.asarray(y)))
+    yi = _binary_targets(y, n)
+    matrix = _resolve_costs(costs, n, 2)
+    if matrix.shape[-1] != 2:
+        raise ValueError(
+            f"`costs` must have two actions (negative, positive) for a cutoff; got "
+            f"{matrix.shape[-1]}. Use tune_class_offsets for more actions."
+        )
+    w = check_sample_weight(sample_weight, n)
+    c0, c1 = _row_costs(matrix, yi)
+    return s, yi, w, c0, c1
+
+
+def search_cutoff(
+    scores: Any,
+    y: Any,
+    costs: Any,
+    *,
+    sample_weight: Any = None,
+    capacity: float | None = None,
+    score_bounds: tuple[float, float] | None = None,
+) -> CutoffSearchResult:
+    """Find the cutoff with the least empirical cost, exactly, over every distinct score.
+
+    The positive action (column 1 of the cost matrix) is taken when ``score > cutoff``.
+
+    Parameters
+    ----------
+    scores : array-like of shape (n,)
+        Held-out scores, higher meaning "more likely positive" (probabilities, log-odds, ...).
+    y : array-like of shape (n,)
+        True classes coded 0 (negative) and 1 (positive).
+    costs : mapping, array-like of shape (2, 2) or (n, 2, 2)
+        Cost matrix (rows: true class, columns: negative / positive action), the binary
+        shorthand ``{"tp", "fp", "fn", "tn"}``, or one matrix per row (e.g. amounts at stake).
+    sample_weight : array-like of shape (n,), default=None
+        Row weights; costs and shares are weighted.
+    capacity : float in (0, 1], default=None
+        Largest weighted share of rows that may receive the positive action. Because tied rows
+        share one action, the flagged share can stay below ``capacity``.
+    score_bounds : (float, float), default=None
+        Range the scores can take (``(0, 1)`` for probabilities). It decides the representative
+        cutoffs at the two ends of the curve; without it the ends are placed one mean gap
+        between distinct scores beyond the extreme scores.
+
+    Returns
+    -------
+    CutoffSearchResult
+
+    Notes
+    -----
+    Cost is O(n log n): one ``argsort`` and a few cumulative sums. Where several neighbouring
+    decisions share the minimal cost the optimum is a flat interval; ``flat`` is set and the
+    middle of the widest such interval is returned. Means are per unit of weight.
+
+    Examples
+    --------
+    >>> from probwrap.decision import search_cutoff
+    >>> res = search_cutoff([0.1, 0.4, 0.4, 0.8], [0, 0, 1, 1], {"fp": 1.0, "fn": 4.0},
+    ...                     score_bounds=(0, 1))
+    >>> res.cutoff, res.cost, res.interval
+    (0.25, 0.25, (0.1, 0.4))
+    """
+    s, yi, w, c0, c1 = _prepare(scores, y, costs, sample_weight)
+    return _search_rows(s, c0, c1, w, check_capacity(capacity), _check_bounds(score_bounds))
+
+
+def _search_rows(s, c0, c1, w, cap, bounds) -> CutoffSearchResult:
+    rows = _SortedRows(s, bounds)
+    total, flagged, weight = rows.curve(c0 * w, c1 * w, w)
+    cost = total / weight
+    share = flagged / weight
+    admissible = np.ones_like(share, dtype=bool) if cap is None else share <= cap * (1 + 1e-12)
+    index, value, lo, hi, flat = _pick_optimum(cost, rows.lower, rows.upper, admissible)
+    return CutoffSearchResult(
+        cutoff=value,
+        cost=float(cost[index]),
+        interval=(lo, hi),
+        flat=flat,
+        cutoffs=rows.mid,
+        costs=cost,
+        flagged_share=share,
+        admissible=admissible,
+        capacity=cap,
+    )
+
+
+def capacity_cutoff(
+    scores: Any,
+    capacity: float,
+    *,
+    sample_weight: Any = None,
+    score_bounds: tuple[float, float] | None = None,
+) -> float:
+    """Lowest cutoff that gives the positive action to at most ``capacity`` of the rows.
+
+    The cutoff lies in the middle of the range of cutoffs that flag the same rows (rows with tied
+    scores are flagged together, so the flagged share may stay below ``capacity``).
+
+    Examples
+    --------
+    >>> from probwrap.decision import capacity_cutoff
+    >>> capacity_cutoff([0.1, 0.2, 0.3, 0.9], 0.5, score_bounds=(0, 1))
+    0.25
+    """
+    s = check_scores(scores, name="scores", ndim=1)
+    cap = check_capacity(capacity)
+    if cap is None:
+        raise ValueError("`capacity` must be a share of rows in (0, 1]; got None.")
+    w = check_sample_weight(sample_weight, s.shape[0])
+    rows = _SortedRows(s, _check_bounds(score_bounds))
+    zeros = np.zeros_like(w)
+    _, flagged, weight = rows.curve(zeros, zeros, w)
+    j = int(np.argmax(flagged / weight <= cap * (1 + 1e-12)))
+    return float(rows.mid[j])
+
+
+def cutoff_interval(
+    scores: Any,
+    y: Any,
+    costs: Any,
+    *,
+    sample_weight: Any = None,
+    fold: Any = None,
+    capacity: float | None = None,
+    score_bounds: tuple[float, float] | None = None,
+    n_resamples: int = 200,
+    confidence_level: float = 0.95,
+    random_state: Any = None,
+) -> CutoffInterval:
+    """How precisely the held-out rows determine the cutoff: bootstrap and fold spread.
+
+    The rows are sorted once; each bootstrap resample only re-weights them (a row drawn ``c``
+    times gets ``c`` times its weight) and repeats the cumulative sums, so a resample costs O(n).
+
+    Parameters
+    ----------
+    scores, y, costs, sample_weight, capacity, score_bounds
+        As for :func:`search_cutoff`.
+    fold : array-like of int of shape (n,), default=None
+        Fold of each row (negative values: no fold). The cutoff is searched on each fold alone.
+    n_resamples : int, default=200
+        Number of bootstrap resamples.
+    confidence_level : float, default=0.95
+        Coverage of the percentile interval.
+    random_state : int, RandomState instance or None, default=None
+        Seed of the resampling.
+
+    Returns
+    -------
+    CutoffInterval
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.decision import cutoff_interval
+    >>> rng = np.random.default_rng(0)
+    >>> p = rng.uniform(size=500)
+    >>> y = (rng.uniform(size=500) < p).astype(int)
+    >>> ci = cutoff_interval(p, y, {"fp": 1.0, "fn": 3.0}, score_bounds=(0, 1),
+    ...                      n_resamples=50, random_state=0)
+    >>> bool(ci.low < 0.25 < ci.high)
+    True
+    """
+    s, yi, w, c0, c1 = _prepare(scores, y, costs, sample_weight)
+    cap = check_capacity(capacity)
+    bounds = _check_bounds(score_bounds)
+    if int(n_resamples) < 1:
+        raise ValueError(f"`n_resamples` must be a positive integer; got {n_resamples!r}.")
+    if not 0.0 < float(confidence_level) < 1.0:
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+    from sklearn.utils import check_random_state
+
+    rng = check_random_state(random_state)
+    rows = _SortedRows(s, bounds)
+    n = s.shape[0]
+    c0w, c1w = c0 * w, c1 * w
+    found = np.empty(int(n_resamples))
+    for b in range(int(n_resamples)):
+        counts = np.bincount(rng.randint(0, n, size=n), minlength=n).astype(float)
+        total, flagged, weight = rows.curve(c0w * counts, c1w * counts, w * counts)
+        if weight <= 0:
+            found[b] = np.nan
+            continue
+        admissible = (
+            np.ones(total.shape[0], dtype=bool)
+            if cap is None
+            else flagged / weight <= cap * (1 + 1e-12)
+        )
+        found[b] = _pick_optimum(total / weight, rows.lower, rows.upper, admissible)[1]
+    found = found[np.isfinite(found)]
+    alpha = (1.0 - float(confidence_level)) / 2.0
+    low, high = (float(v) for v in np.quantile(found, [alpha, 1.0 - alpha]))
+
+    fold_cutoffs = []
+    if fold is not None:
+        f = np.asarray(fold)
+        check_same_length(("scores", s), ("fold", f))
+        for k in np.unique(f[f >= 0]):
+            mask = f == k
+            if not np.any(w[mask] > 0):
+                continue
+            res = _search_rows(s[mask], c0[mask], c1[mask], w[mask], cap, bounds)
+            fold_cutoffs.append(res.cutoff)
+    fold_arr = np.asarray(fold_cutoffs, dtype=float)
+    return CutoffInterval(
+        low=low,
+        high=high,
+        confidence_level=float(confidence_level),
+        bootstrap_cutoffs=found,
+        fold_cutoffs=fold_arr,
+        fold_low=float(fold_arr.min()) if fold_arr.size else low,
+        fold_high=float(fold_arr.max()) if fold_arr.size else high,
+    )
