@@ -16,6 +16,58 @@ __all__ = ["BiasCorrectedScaling"]
 _KINDS = ("temperature", "vector")
 
 
+def _hessian(z: np.ndarray, w: np.ndarray, n_scale: int):
+    """Hessian of the weighted softmax log-loss in (scales, biases 1..k-1) at given logits."""
+
+    def hess(logits: np.ndarray) -> np.ndarray:
+        p = np.exp(log_softmax(logits, axis=1))
+        pw = p * w[:, None]
+        pz = p * z
+        # bias block: sum_n w (diag p - p p^T)
+        h_bb = np.diag(pw.sum(0)) - pw.T @ p
+        if n_scale == 1:
+            s_z = pz.sum(1)  # p . z per row
+            h_aa = np.array([[np.sum(w * (np.sum(pz * z, 1) - s_z**2))]])
+            h_ab = (w @ (pz - p * s_z[:, None]))[None, :]
+        else:
+            pzw = pz * w[:, None]
+            h_aa = np.diag(np.sum(pzw * z, 0)) - pzw.T @ pz
+            h_ab = np.diag(pzw.sum(0)) - pzw.T @ p
+        top = np.hstack([h_aa, h_ab[:, 1:]])
+        bottom = np.hstack([h_ab[:, 1:].T, h_bb[1:, 1:]])
+        return np.vstack([top, bottom])
+
+    return hess
+
+
+def _newton(loss_grad, hess, theta0: np.ndarray, n_scale: int, max_iter: int = 100):
+    """Damped Newton with backtracking; scales are kept >= 0 by projection."""
+    theta = theta0.astype(float).copy()
+    loss, grad = loss_grad(theta)
+    for _ in range(max_iter):
+        h = hess(theta)
+        ridge = 1e-12 * max(float(np.trace(h)), 1.0)
+        try:
+            step = -np.linalg.solve(h + ridge * np.eye(h.shape[0]), grad)
+        except np.linalg.LinAlgError:  # pragma: no cover
+            step = -grad
+        t = 1.0
+        while True:
+            cand = theta + t * step
+            cand[:n_scale] = np.maximum(cand[:n_scale], 0.0)
+            new_loss, new_grad = loss_grad(cand)
+            if new_loss <= loss + 1e-4 * t * float(grad @ step) or t < 1e-10:
+                break
+            t *= 0.5
+        decrease = loss - new_loss
+        theta, loss, grad = cand, new_loss, new_grad
+        free = np.ones_like(grad, dtype=bool)
+        free[:n_scale] = ~((theta[:n_scale] <= 0) & (grad[:n_scale] > 0))
+        if np.max(np.abs(grad[free]), initial=0.0) < 1e-11 or 0 <= decrease < 1e-16:
+            return theta, True
+    return theta, False
+
+
 class BiasCorrectedScaling:
     r"""Bias-corrected temperature scaling or vector scaling of log-probabilities.
 
@@ -78,8 +130,14 @@ class BiasCorrectedScaling:
         """
         return self.fit_log_proba(proba_to_log_proba(proba), y, sample_weight)
 
-    def fit_log_proba(self, log_proba: Any, y: Any, sample_weight: Any = None) -> BiasCorrectedScaling:
-        """Fit on held-out log-probabilities or logits of shape (n, k)."""
+    def fit_log_proba(
+        self, log_proba: Any, y: Any, sample_weight: Any = None, *, warm_start: Any = None
+    ) -> BiasCorrectedScaling:
+        """Fit on held-out log-probabilities or logits of shape (n, k).
+
+        ``warm_start`` is another fitted :class:`BiasCorrectedScaling` of the same kind and
+        number of classes whose parameters start the optimiser (used by bootstrap resampling).
+        """
         if self.kind not in _KINDS:
             raise ValueError(f"`kind` must be one of {_KINDS}; got {self.kind!r}.")
         z = check_scores(log_proba, name="log_proba", ndim=2)
@@ -107,20 +165,35 @@ class BiasCorrectedScaling:
             return loss, np.concatenate([g_scale, resid.sum(axis=0)[1:]])
 
         theta0 = np.concatenate([np.ones(n_scale), np.zeros(k - 1)])
-        bounds = [(0.0, None)] * n_scale + [(None, None)] * (k - 1)
-        res = minimize(
-            loss_grad,
-            theta0,
-            jac=True,
-            method="L-BFGS-B",
-            bounds=bounds,
-            options={"maxiter": 1000, "gtol": 1e-10, "ftol": 1e-14},
-        )
-        a, b = unpack(res.x)
+        if (
+            warm_start is not None
+            and getattr(warm_start, "kind", None) == self.kind
+            and getattr(warm_start, "n_classes_", None) == k
+        ):
+            theta0 = np.concatenate([warm_start.scale_[:n_scale], warm_start.bias_[1:]])
+        hess_logits = _hessian(z, w, n_scale)
+
+        def hess(theta: np.ndarray) -> np.ndarray:
+            a, b = unpack(theta)
+            return hess_logits(z * a + b)
+
+        theta, converged = _newton(loss_grad, hess, theta0, n_scale)
+        if not converged:  # pragma: no cover - Newton on this convex loss converges in a few steps
+            bounds = [(0.0, None)] * n_scale + [(None, None)] * (k - 1)
+            res = minimize(
+                loss_grad,
+                theta,
+                jac=True,
+                method="L-BFGS-B",
+                bounds=bounds,
+                options={"maxiter": 1000, "gtol": 1e-10, "ftol": 1e-14},
+            )
+            theta, converged = res.x, bool(res.success)
+        a, b = unpack(theta)
         self.scale_ = np.array(a, dtype=float)
         self.bias_ = np.array(b, dtype=float)
         self.n_classes_ = k
-        self.converged_ = bool(res.success)
+        self.converged_ = bool(converged)
         return self
 
     def predict_log_proba(self, log_proba: Any) -> np.ndarray:

@@ -11,6 +11,7 @@ from sklearn.exceptions import ConvergenceWarning
 from sklearn.utils import check_random_state
 
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight
+from ..calibration._logodds import proba_to_log_proba
 from ._calibration import BiasCorrectedScaling
 from ._estimate import (
     PriorEstimate,
@@ -154,12 +155,16 @@ class PriorEstimator:
         self.calibrator_, self.source_prior_, self.confusion_, self.soft_confusion_ = summary
         return self
 
-    def _summarise(self, p: np.ndarray, y_idx: np.ndarray, w: np.ndarray) -> tuple:
+    def _summarise(
+        self, p: np.ndarray, y_idx: np.ndarray, w: np.ndarray, warm_start: Any = None
+    ) -> tuple:
         k = p.shape[1]
         cal = None
         if self.calibration is not None:
             kind = "temperature" if self.calibration == "bcts" else "vector"
-            cal = BiasCorrectedScaling(kind=kind).fit(p, y_idx, w)
+            cal = BiasCorrectedScaling(kind=kind).fit_log_proba(
+                proba_to_log_proba(p), y_idx, w, warm_start=warm_start
+            )
             p = cal.predict(p)
         prior = np.bincount(y_idx, weights=w, minlength=k) / w.sum()
         hard = heldout_confusion(p, y_idx, sample_weight=w)
@@ -285,7 +290,7 @@ class PriorEstimator:
                     ws = rng.multinomial(ns, np.full(ns, 1.0 / ns)) * sw
                     if np.any(np.bincount(sy, weights=ws, minlength=k) <= 0):
                         continue  # a class vanished from this resample: its prior is undefined
-                    cal, src, hard, soft = self._summarise(sp, sy, ws)
+                    cal, src, hard, soft = self._summarise(sp, sy, ws, self.calibrator_)
                     pt = p_raw if cal is None else cal.predict(p_raw)
                 if wt.sum() <= 0:  # pragma: no cover - multinomial counts always sum to n
                     continue
