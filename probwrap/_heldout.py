@@ -238,6 +238,13 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             values = self._cross_fit(X, y_arr, splits, est_params, response, classes)
             estimator = clone(self.estimator).fit(X, y_arr, **est_params)
 
+        if sw is not None:
+            weighted = np.unique(np.asarray(y_index)[sw > 0])
+            if weighted.shape[0] < 2:
+                raise ValueError(
+                    "Only one class has a positive `sample_weight`; at least two classes must "
+                    "carry weight."
+                )
         values = np.asarray(values, dtype=float)
         if not np.all(np.isfinite(values)):
             raise ValueError(
