@@ -1,0 +1,475 @@
+"""CostPolicyWrapper: turn a classifier's probabilities into least-expected-cost actions."""
+
+from __future__ import annotations
+
+import numbers
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+from sklearn.base import clone
+from sklearn.utils.multiclass import check_classification_targets
+from sklearn.utils.validation import check_is_fitted, column_or_1d
+
+from ._heldout import HeldOutClassifierBase, HeldOutPredictions, is_frozen
+from ._validation import check_labels, check_sample_weight
+from .decision import (
+    apply_class_offsets,
+    budget_actions,
+    capacity_cutoff,
+    check_capacity,
+    check_cost_matrix,
+    check_row_costs,
+    cutoff_interval,
+    expected_costs,
+    fit_action_budget,
+    plugin_cutoff,
+    search_cutoff,
+    tune_class_offsets,
+    zero_one_costs,
+)
+
+__all__ = ["CostPolicyWrapper"]
+
+_STRATEGIES = ("bayes", "tuned", "fixed")
+_BINARY_ONLY = "Only binary classification is supported"
+
+
+def _scalar_cutoff(cutoff: Any) -> bool:
+    return isinstance(cutoff, numbers.Real) and not isinstance(cutoff, bool)
+
+
+class CostPolicyWrapper(HeldOutClassifierBase):
+    """Least-expected-cost actions from any classifier's probabilities.
+
+    The wrapper reads the inner estimator's ``predict_proba`` and, for each row, takes the action
+    with the least expected cost under a cost matrix, optionally with the decision rule tuned on
+    held-out predictions, a capacity limit on one action, per-row costs and actions that differ
+    from the classes (e.g. a reject / refer action).
+
+    The plug-in rule is only as good as the probabilities: wrap a
+    :class:`~probwrap.CalibrationWrapper` (``CostPolicyWrapper(CalibrationWrapper(model))``), or
+    use ``strategy="tuned"``, which corrects for miscalibration on held-out predictions.
+
+    Decisions that affect people (credit, health, fraud) need validation on data like the
+    deployment data, checks of error rates across groups, a route for contested decisions, and
+    compliance with local regulation and licensed professional practice.
+
+    Parameters
+    ----------
+    estimator : classifier
+        Any classifier with ``predict_proba``. A :class:`~sklearn.frozen.FrozenEstimator` is used
+        as fitted: nothing is refitted and every row passed to :meth:`fit` is held-out data.
+    costs : None, mapping, array-like of shape (n_classes, n_actions) or callable, default=None
+        Cost of each action (columns) when each class (rows, in ``classes_`` order) is true;
+        negative entries are gains. A mapping is the binary shorthand with keys ``"tp"``,
+        ``"fp"``, ``"fn"``, ``"tn"`` (missing keys cost 0). A callable ``costs(X)`` returns one
+        matrix per row, shape (n, n_classes, n_actions), e.g. built from an amount column of
+        ``X``. ``None`` means the 0-1 loss and no tuning: the wrapper is then the plain
+        classifier (its predictions are the argmax of ``predict_proba``) unless ``cutoff`` or
+        ``capacity`` asks otherwise; to tune for accuracy pass ``{"fp": 1, "fn": 1}``.
+    strategy : {"bayes", "tuned", "fixed"}, default="bayes"
+        ``"bayes"``: the plug-in rule, argmin over actions of ``sum_k p_k C[k, a]`` (binary: act
+        when ``p > (c_fp - c_tn) / ((c_fp - c_tn) + (c_fn - c_tp))``, Elkan 2001).
+        ``"tuned"``: binary with constant costs, the cutoff on ``p`` with the least cost on the
+        out-of-fold predictions of all folds pooled (an exact search over every distinct held-out
+        probability); otherwise per-class offsets on the log-probability scale fitted the same
+        way. ``"fixed"``: use ``cutoff`` as given, so that a search can tune it.
+    cutoff : float or array-like of shape (n_classes,), default=None
+        With ``strategy="fixed"``: the probability cutoff (binary: the second action is taken when
+        ``p > cutoff``), or, for more classes, actions or per-row costs, per-class offsets on the
+        log-probability scale. Must be None for the other strategies.
+    capacity : float in (0, 1] or dict, default=None
+        Largest share of rows that may receive one action: a float limits the second action of a
+        two-action problem (the costly one, e.g. "inspect"); ``{action: share}`` limits a named
+        action. Rows are given the action in order of the cost they save. The limit holds exactly
+        on the held-out rows and approximately on new rows from the same population.
+    actions : array-like of shape (n_actions,), default=None
+        Labels of the actions (columns of ``costs``) returned by :meth:`predict`. Default: the
+        class labels, which needs as many actions as classes.
+    cv : int, splitter or iterable of (train, test) pairs, default=5
+        Folds for the held-out predictions (``"tuned"``, or any strategy with a capacity).
+    n_jobs : int, default=None
+        Parallel jobs for cross-fitting.
+    random_state : int, RandomState or None, default=None
+        Shuffling of the folds and seed of the bootstrap behind ``cutoff_interval_``.
+    n_resamples : int, default=200
+        Bootstrap resamples for ``cutoff_interval_``.
+    confidence_level : float, default=0.95
+        Coverage of ``cutoff_interval_``.
+
+    Attributes
+    ----------
+    estimator_ : classifier
+        Fitted inner estimator (refitted on all rows unless frozen).
+    classes_ : ndarray of shape (n_classes,)
+        Class labels.
+    actions_ : ndarray of shape (n_actions,)
+        Action labels.
+    cost_matrix_ : ndarray of shape (n_classes, n_actions) or None
+        Costs in use (None with per-row costs).
+    cutoff_ : float or None
+        Binary problems with constant costs and two actions: the second action is taken when the
+        positive-class probability exceeds it. None otherwise.
+    class_offsets_ : ndarray of shape (n_classes,) or None
+        Log-probability offsets of the rule in the other cases (zeros for ``"bayes"``).
+    cost_curve_ : CutoffSearchResult or None
+        ``"tuned"`` binary cutoff: held-out cost at every distinct cutoff and the optimum.
+    action_budget_ : ActionBudget or None
+        Fitted capacity limit for the non-cutoff cases.
+    heldout_cost_ : float or None
+        Mean cost per row of the fitted policy on the held-out predictions (None when the
+        strategy needed none: ``"bayes"`` / ``"fixed"`` without a capacity and not frozen).
+    cutoff_interval_ : CutoffInterval or None
+        ``"tuned"`` binary cutoff: bootstrap interval of the cutoff and its spread across folds,
+        computed on first access. None otherwise.
+
+    Examples
+    --------
+    >>> from sklearn.linear_model import LogisticRegression
+    >>> from probwrap import CostPolicyWrapper
+    >>> from probwrap.datasets import make_parcels
+    >>> parcels = make_parcels(3000, random_state=0)
+    >>> policy = CostPolicyWrapper(LogisticRegression(max_iter=1000),
+    ...                            costs={"fp": 2.0, "fn": 35.0},
+    ...                            actions=["ship", "inspect"])
+    >>> policy.fit(parcels.data, parcels.target).predict(parcels.data[:3]).tolist()
+    ['ship', 'ship', 'ship']
+    >>> round(policy.cutoff_, 4)
+    0.0541
+    """
+
+    _heldout_response = "predict_proba"
+
+    def __init__(
+        self,
+        estimator: Any = None,
+        *,
+        costs: Any = None,
+        strategy: str = "bayes",
+        cutoff: Any = None,
+        capacity: Any = None,
+        actions: Any = None,
+        cv: Any = 5,
+        n_jobs: int | None = None,
+        random_state: Any = None,
+        n_resamples: int = 200,
+        confidence_level: float = 0.95,
+    ) -> None:
+        self.estimator = estimator
+        self.costs = costs
+        self.strategy = strategy
+        self.cutoff = cutoff
+        self.capacity = capacity
+        self.actions = actions
+        self.cv = cv
+        self.n_jobs = n_jobs
+        self.random_state = random_state
+        self.n_resamples = n_resamples
+        self.confidence_level = confidence_level
+
+    # -- parameter checks ------------------------------------------------------------------
+    def _check_params(self) -> None:
+        if self.strategy not in _STRATEGIES:
+            raise ValueError(f"`strategy` must be one of {_STRATEGIES}; got {self.strategy!r}.")
+        if self.strategy == "fixed" and self.cutoff is None:
+            raise ValueError(
+                "`cutoff` must be given with strategy='fixed' (a probability cutoff, or "
+                "per-class offsets); got None."
+            )
+        if self.strategy != "fixed" and self.cutoff is not None:
+            raise ValueError(
+                f"`cutoff` is only used with strategy='fixed'; got cutoff={self.cutoff!r} with "
+                f"strategy={self.strategy!r}. Set cutoff=None or strategy='fixed'."
+            )
+        if isinstance(self.capacity, Mapping):
+            if len(self.capacity) != 1:
+                raise ValueError(
+                    "`capacity` as a dict must name exactly one action, {action: share}; got "
+                    f"{len(self.capacity)} entries."
+                )
+            check_capacity(next(iter(self.capacity.values())))
+        else:
+            check_capacity(self.capacity)
+        if self.costs is not None and not (
+            callable(self.costs) or isinstance(self.costs, Mapping)
+        ):
+            check_cost_matrix(self.costs)
+
+    def _binary_only(self) -> bool:
+        return isinstance(self.costs, Mapping) or (
+            self.strategy == "fixed" and _scalar_cutoff(self.cutoff)
+        )
+
+    # -- fitting ---------------------------------------------------------------------------
+    def _fit_without_heldout(self, X, y, sample_weight, fit_params) -> np.ndarray:
+        """Fit the estimator once on all rows (strategies that need no held-out predictions)."""
+        if self.estimator is None:
+            raise ValueError("`estimator` must be a classifier; got None.")
+        if y is None:
+            raise ValueError(
+                f"{type(self).__name__} requires y to be passed, but the target y is None."
+            )
+        y_arr = column_or_1d(y, warn=True)
+        check_classification_targets(y_arr)
+        sw = check_sample_weight(sample_weight, y_arr.shape[0]) if sample_weight is not None else None
+        y_index, classes = check_labels(y_arr, name="y")
+        if not hasattr(self.estimator, "predict_proba"):
+            raise ValueError(
+                f"`estimator` ({type(self.estimator).__name__}) has no predict_proba; wrap it in "
+                "CalibrationWrapper, which turns decision_function scores into probabilities."
+            )
+        est_params, _ = self._route_fit_params(sw, dict(fit_params))
+        estimator = clone(self.estimator).fit(X, y_arr, **est_params)
+        self.estimator_ = estimator
+        self.classes_ = np.asarray(estimator.classes_)
+        if hasattr(estimator, "n_features_in_"):
+            self.n_features_in_ = estimator.n_features_in_
+        if hasattr(estimator, "feature_names_in_"):
+            self.feature_names_in_ = estimator.feature_names_in_
+        return y_index
+
+    def fit(self, X: Any, y: Any, sample_weight: Any = None, **fit_params: Any) -> CostPolicyWrapper:
+        """Fit the estimator and the decision rule.
+
+        Parameters
+        ----------
+        X : array-like, DataFrame, sparse matrix, ...
+            Whatever the wrapped estimator accepts; passed to it untouched.
+        y : array-like of shape (n,)
+            Class labels.
+        sample_weight : array-like of shape (n,), default=None
+            Row weights: passed to the estimator where it accepts them, and weighting the held-out
+            costs and capacity shares.
+        **fit_params : dict
+            Further parameters for the estimator's ``fit`` (routed with metadata routing).
+
+        Returns
+        -------
+        self
+        """
+        self._check_params()
+        needs_heldout = (
+            self.strategy == "tuned" or self.capacity is not None or is_frozen(self.estimator)
+        )
+        ho: HeldOutPredictions | None = None
+        if needs_heldout:
+            ho = self._fit_heldout(X, y, sample_weight, fit_params, response="predict_proba")
+        else:
+            self._fit_without_heldout(X, y, sample_weight, fit_params)
+        k = self.classes_.shape[0]
+        if self._binary_only() and k != 2:
+            raise ValueError(
+                f"{_BINARY_ONLY} with binary costs (tp/fp/fn/tn) or a single cutoff; `y` has "
+                f"{k} classes. Give an ({k}, n_actions) cost matrix, or per-class offsets as "
+                "`cutoff`."
+            )
+
+        row_costs = None
+        if callable(self.costs):
+            row_costs = self._row_costs(X, k)
+            matrix = None
+            n_actions = row_costs.shape[2]
+        elif self.costs is None:
+            matrix = zero_one_costs(k)
+            n_actions = k
+        else:
+            matrix = check_cost_matrix(self.costs, n_classes=k)
+            n_actions = matrix.shape[1]
+        self.cost_matrix_ = matrix
+        self.actions_ = self._resolve_actions(n_actions)
+        self._plain = self.costs is None and self.capacity is None and self.strategy != "fixed"
+        self._cutoff_mode = k == 2 and n_actions == 2 and matrix is not None
+        budget_index, budget_share = self._resolve_capacity(n_actions)
+
+        self.cutoff_ = None
+        self.class_offsets_ = None
+        self.cost_curve_ = None
+        self.action_budget_ = None
+        self.heldout_cost_ = None
+        self._interval_inputs = None
+        self._interval_cache = None
+
+        proba = None if ho is None else self._check_heldout_proba(ho.values, k)
+        if self._cutoff_mode:
+            self._fit_cutoff(ho, proba, matrix, budget_share)
+        else:
+            self._fit_offsets(ho, proba, matrix, row_costs, k, budget_index, budget_share)
+        if ho is not None:
+            chosen = self._decide(proba, matrix if row_costs is None else row_costs)
+            realised = (
+                matrix[ho.y_index, chosen]
+                if row_costs is None
+                else row_costs[np.arange(chosen.shape[0]), ho.y_index, chosen]
+            )
+            w = ho.sample_weight
+            self.heldout_cost_ = float(np.dot(w, realised) / w.sum())
+        return self
+
+    def _check_heldout_proba(self, values: np.ndarray, k: int) -> np.ndarray:
+        if values.ndim != 2 or values.shape[1] != k:
+            raise ValueError(
+                f"`estimator`'s predict_proba returned shape {values.shape}; expected (n, {k})."
+            )
+        return values
+
+    def _row_costs(self, X: Any, k: int) -> np.ndarray:
+        out = self.costs(X)
+        n = _num_rows(X)
+        return check_row_costs(out, n, n_classes=k, name="costs(X)")
+
+    def _resolve_actions(self, n_actions: int) -> np.ndarray:
+        if self.actions is None:
+            if n_actions != self.classes_.shape[0]:
+                raise ValueError(
+                    f"`actions` must name the {n_actions} actions (columns of `costs`): there are "
+                    f"{self.classes_.shape[0]} classes, so the class labels cannot be used."
+                )
+            return self.classes_.copy()
+        labels = np.asarray(self.actions)
+        if labels.ndim != 1 or labels.shape[0] != n_actions:
+            raise ValueError(
+                f"`actions` must have one label per column of `costs` ({n_actions}); got shape "
+                f"{labels.shape}."
+            )
+        if np.unique(labels).shape[0] != labels.shape[0]:
+            raise ValueError(f"`actions` must be distinct; got {labels.tolist()}.")
+        return labels
+
+    def _resolve_capacity(self, n_actions: int) -> tuple[int | None, float | None]:
+        if self.capacity is None:
+            return None, None
+        if isinstance(self.capacity, Mapping):
+            (label, share), = self.capacity.items()
+            matches = np.flatnonzero(self.actions_ == label)
+            if matches.shape[0] != 1:
+                raise ValueError(
+                    f"`capacity` names action {label!r}, which is not among the actions "
+                    f"{self.actions_.tolist()}."
+                )
+            return int(matches[0]), check_capacity(share)
+        if n_actions != 2:
+            raise ValueError(
+                f"`capacity` as a number limits the second of two actions; there are {n_actions} "
+                "actions, so name the limited one: capacity={action: share}."
+            )
+        return 1, check_capacity(self.capacity)
+
+    def _fit_cutoff(self, ho, proba, matrix, share) -> None:
+        if self.strategy == "fixed":
+            cutoff = _check_cutoff(self.cutoff)
+        elif self.strategy == "tuned" and self.costs is not None:
+            p = proba[:, 1]
+            res = search_cutoff(
+                p, ho.y_index, matrix, sample_weight=ho.sample_weight, capacity=share,
+                score_bounds=(0.0, 1.0),
+            )
+            self.cost_curve_ = res
+            self._interval_inputs = (p, ho.y_index, matrix, ho.sample_weight, ho.fold, share)
+            self.cutoff_ = res.cutoff
+            return
+        else:
+            cutoff = plugin_cutoff(matrix)
+        if share is not None:
+            cap_cut = capacity_cutoff(
+                proba[:, 1], share, sample_weight=ho.sample_weight, score_bounds=(0.0, 1.0)
+            )
+            cutoff = max(cutoff, cap_cut)
+        self.cutoff_ = float(cutoff)
+
+    def _fit_offsets(self, ho, proba, matrix, row_costs, k, budget_index, share) -> None:
+        costs = matrix if row_costs is None else row_costs
+        if self.strategy == "fixed":
+            if _scalar_cutoff(self.cutoff):
+                raise ValueError(
+                    "`cutoff` must be per-class offsets of shape "
+                    f"({k},) here (more than two actions or per-row costs); a single "
+                    "probability cutoff applies only to two actions with constant costs."
+                )
+            offsets = np.array(self.cutoff, dtype=float)
+            if offsets.shape != (k,) or not np.all(np.isfinite(offsets)):
+                raise ValueError(
+                    f"`cutoff` must be finite per-class offsets of shape ({k},); got "
+                    f"{self.cutoff!r}."
+                )
+        elif self.strategy == "tuned" and self.costs is not None:
+            res = tune_class_offsets(proba, ho.y_index, costs, sample_weight=ho.sample_weight)
+            offsets = res.offsets
+        else:
+            offsets = np.zeros(k)
+        self.class_offsets_ = offsets
+        if share is not None:
+            E = expected_costs(apply_class_offsets(proba, offsets), costs)
+            self.action_budget_ = fit_action_budget(
+                E, budget_index, share, sample_weight=ho.sample_weight
+            )
+
+    # -- prediction ------------------------------------------------------------------------
+    def _decide(self, proba: np.ndarray, costs: np.ndarray) -> np.ndarray:
+        if self._plain:
+            return np.argmax(proba, axis=1)
+        if self._cutoff_mode:
+            return (proba[:, 1] > self.cutoff_).astype(np.intp)
+        E = expected_costs(apply_class_offsets(proba, self.class_offsets_), costs)
+        if self.action_budget_ is not None:
+            b = self.action_budget_
+            return budget_actions(E, b.action, b.saving_threshold)
+        return np.argmin(E, axis=1)
+
+    def _costs_for(self, X: Any) -> np.ndarray:
+        if self.cost_matrix_ is not None:
+            return self.cost_matrix_
+        return self._row_costs(X, self.classes_.shape[0])
+
+    def predict_proba(self, X: Any) -> np.ndarray:
+        """The wrapped estimator's class probabilities, unchanged, shape (n, n_classes)."""
+        check_is_fitted(self, "actions_")
+        return self._inner_output(X, "predict_proba")
+
+    def predict(self, X: Any) -> np.ndarray:
+        """Action for each row (labels from ``actions_``)."""
+        proba = self.predict_proba(X)
+        costs = None if (self._plain or self._cutoff_mode) else self._costs_for(X)
+        return self.actions_[self._decide(proba, costs)]
+
+    def expected_costs(self, X: Any) -> np.ndarray:
+        """Expected cost of every action under the wrapped model's probabilities, (n, n_actions)."""
+        proba = self.predict_proba(X)
+        return expected_costs(proba, self._costs_for(X))
+
+    @property
+    def cutoff_interval_(self) -> Any:
+        """Bootstrap interval and fold spread of the tuned cutoff (None if there is none)."""
+        check_is_fitted(self, "actions_")
+        if self._interval_inputs is None:
+            return None
+        if self._interval_cache is None:
+            p, y, matrix, w, fold, share = self._interval_inputs
+            self._interval_cache = cutoff_interval(
+                p, y, matrix, sample_weight=w, fold=fold, capacity=share,
+                score_bounds=(0.0, 1.0), n_resamples=self.n_resamples,
+                confidence_level=self.confidence_level, random_state=self.random_state,
+            )
+        return self._interval_cache
+
+    def __sklearn_tags__(self):
+        tags = super().__sklearn_tags__()
+        if self._binary_only():
+            tags.classifier_tags.multi_class = False
+        return tags
+
+
+def _check_cutoff(cutoff: Any) -> float:
+    if not _scalar_cutoff(cutoff) or not np.isfinite(float(cutoff)):
+        raise ValueError(f"`cutoff` must be a finite probability in [0, 1]; got {cutoff!r}.")
+    value = float(cutoff)
+    if not 0.0 <= value <= 1.0:
+        raise ValueError(f"`cutoff` must be a probability in [0, 1]; got {cutoff!r}.")
+    return value
+
+
+def _num_rows(X: Any) -> int:
+    shape = getattr(X, "shape", None)
+    if shape is not None and len(shape) > 0:
+        return int(shape[0])
+    return len(X)
