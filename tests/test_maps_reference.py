@@ -18,7 +18,6 @@ from sklearn.calibration import CalibratedClassifierCV
 from sklearn.datasets import load_breast_cancer, load_digits
 from sklearn.frozen import FrozenEstimator
 from sklearn.isotonic import IsotonicRegression
-from sklearn.linear_model import LogisticRegression
 from sklearn.model_selection import train_test_split
 from sklearn.naive_bayes import GaussianNB
 

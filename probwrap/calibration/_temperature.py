@@ -5,8 +5,8 @@ from __future__ import annotations
 import warnings
 
 import numpy as np
-from scipy.optimize import minimize_scalar
-from scipy.special import expit, log_softmax, softmax
+from scipy.optimize import brentq
+from scipy.special import expit, softmax
 
 from ._base import CalibrationMap
 
@@ -16,16 +16,20 @@ __all__ = ["TemperatureMap"]
 _LOG_SPAN = 16.0
 
 
-def _temperature_loss(
-    log_t: float, scores: np.ndarray, y: np.ndarray, wn: np.ndarray
-) -> float:
-    """Weighted mean log loss of the scores divided by ``exp(log_t)``."""
-    inv_t = np.exp(-log_t)
+def _loss_slope(log_beta: float, scores: np.ndarray, y: np.ndarray, wn: np.ndarray) -> float:
+    """Derivative of the weighted mean log loss with respect to the inverse temperature.
+
+    With ``beta = 1 / T`` the loss is convex in ``beta`` (a log-sum-exp of linear functions),
+    so this derivative is non-decreasing in ``beta`` and the best temperature is its root.
+    Binary: ``sum wn * s * (sigmoid(beta * s) - y)``; multiclass: ``sum wn * (E_q[z] - z_y)``
+    with ``q = softmax(beta * z)``.
+    """
+    beta = np.exp(log_beta)
     if scores.ndim == 1:
-        eta = scores * inv_t
-        return float(wn @ (np.logaddexp(0.0, eta) - y * eta))
-    logp = log_softmax(scores * inv_t, axis=1)
-    return float(-(wn @ logp[np.arange(scores.shape[0]), y.astype(np.intp)]))
+        return float(wn @ (scores * (expit(beta * scores) - y)))
+    q = softmax(beta * scores, axis=1)
+    expected = np.sum(q * scores, axis=1)
+    return float(wn @ (expected - scores[np.arange(scores.shape[0]), y.astype(np.intp)]))
 
 
 class TemperatureMap(CalibrationMap):
@@ -36,11 +40,12 @@ class TemperatureMap(CalibrationMap):
     ``T > 1`` softens over-confident scores, ``T < 1`` sharpens them; the order of the scores
     (and so the arg-max class) never changes.
 
-    ``T`` minimises the weighted log loss, searched on ``log T`` by bounded Brent minimisation
-    (SciPy ``minimize_scalar``, absolute tolerance 1e-10 on ``log T``). The loss is convex in
-    ``1 / T``, so the minimum is unique. The search covers ``exp(+-16)`` times the
-    root-mean-square score; when the best ``T`` lies at an end (scores unrelated to the labels,
-    or classes separated perfectly) the map warns.
+    ``T`` minimises the weighted log loss. The loss is convex in ``1 / T``, so the minimum is
+    unique and is the root of the loss's derivative with respect to ``1 / T``; the root is found
+    on ``log T`` by Brent's method (SciPy ``brentq``, tolerance 1e-14), which stays precise
+    even where the loss itself is flat. The search covers ``exp(+-16)`` times the
+    root-mean-square score; when the best ``T`` lies beyond an end (scores unrelated to or
+    against the labels, or classes separated perfectly) the map warns and uses that end.
 
     Attributes
     ----------
@@ -86,16 +91,18 @@ class TemperatureMap(CalibrationMap):
             # every score is the same (per row): the temperature has no effect on the output
             self.temperature_ = 1.0
             return
-        lo, hi = np.log(scale) - _LOG_SPAN, np.log(scale) + _LOG_SPAN
-        res = minimize_scalar(
-            _temperature_loss,
-            bounds=(lo, hi),
-            args=(scores, y, wn),
-            method="bounded",
-            options={"xatol": 1e-10, "maxiter": 2000},
-        )
-        log_t = float(res.x)
-        if min(log_t - lo, hi - log_t) < 1e-3:
+        # search log(beta) = -log(T) within exp(+-_LOG_SPAN) of 1 / scale
+        lo, hi = -np.log(scale) - _LOG_SPAN, -np.log(scale) + _LOG_SPAN
+        args = (scores, y, wn)
+        at_end = False
+        if _loss_slope(lo, *args) >= 0:
+            log_beta, at_end = lo, True  # scores unrelated to (or against) the labels
+        elif _loss_slope(hi, *args) <= 0:
+            log_beta, at_end = hi, True  # classes separated perfectly
+        else:
+            log_beta = brentq(_loss_slope, lo, hi, args=args, xtol=1e-14, rtol=1e-15)
+        log_t = -float(log_beta)
+        if at_end:
             warnings.warn(
                 "TemperatureMap: the best temperature lies at the end of the search range "
                 f"(T = {np.exp(log_t):.3g}); the scores are either unrelated to the labels or "
