@@ -7,7 +7,7 @@ import warnings
 from typing import Any
 
 import numpy as np
-from scipy.special import log_softmax
+from scipy.special import logsumexp
 from sklearn.base import clone
 from sklearn.model_selection import StratifiedKFold
 from sklearn.utils.metaestimators import available_if
@@ -18,7 +18,7 @@ from .calibration._base import CalibrationMap
 from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
 from .calibration._isotonic import IsotonicMap
-from .calibration._logodds import DEFAULT_CLIP, proba_to_log_odds
+from .calibration._logodds import DEFAULT_CLIP
 from .calibration._platt import PlattMap
 from .calibration._temperature import TemperatureMap
 from .calibration._venn_abers import VennAbersMap
@@ -35,15 +35,15 @@ CALIBRATION_METHODS: dict[str, type[CalibrationMap]] = {
     "venn_abers": VennAbersMap,
 }
 
+#: Maps that use only the order of the scores: they get full-resolution scores.
+_ORDER_BASED = (IsotonicMap, BinningMap, VennAbersMap)
+
+#: Exact zero probabilities become this (the smallest positive float) before taking logs.
+_TINY = np.nextafter(0.0, 1.0)
+
 #: Probabilities are floored at this value when scoring candidate maps by log loss, so that a map
 #: that predicts an exact 0 for an event that happens is heavily penalised but stays finite.
 _LOG_LOSS_FLOOR = 1e-15
-
-
-def _log1mexp(lp: np.ndarray) -> np.ndarray:
-    """log(1 - exp(lp)) for lp <= 0, accurate at both ends."""
-    lp = np.minimum(lp, -1e-300)
-    return np.where(lp > -np.log(2.0), np.log(-np.expm1(lp)), np.log1p(-np.exp(lp)))
 
 
 def _uses_interval(self: CalibrationWrapper) -> bool:
@@ -81,8 +81,12 @@ class CalibrationWrapper(HeldOutClassifierBase):
     candidates : sequence of str, default=None
         Maps that ``"auto"`` chooses from (default: all six).
     clip : float, default=1e-12
-        Probabilities closer than this to 0 or 1 are moved to this distance before taking
-        log-odds (see :func:`probwrap.calibration.proba_to_log_odds`).
+        Only for the parametric maps (Platt, beta, temperature) fitted on ``predict_proba``
+        output: log-odds are clipped to ``±logit(1 - clip)`` (about ±27.6 by default, log-
+        probabilities floored at ``log(clip)``), so that a few extreme and confidently wrong rows
+        cannot dominate the fit. Order-based maps (isotonic, binning, Venn–Abers) always see the
+        full-resolution log-odds ``log p1 - log p0``, which keep the order of probabilities deep
+        in the tails; exact zeros become the smallest positive float.
 
     Attributes
     ----------
@@ -195,31 +199,53 @@ class CalibrationWrapper(HeldOutClassifierBase):
 
     # -- scores ------------------------------------------------------------------------------
     def _to_scores(self, values: np.ndarray) -> np.ndarray:
-        """Inner-estimator output -> log-odds (binary, (n,)) or log-scale scores (n, k)."""
+        """Inner-estimator output -> log-odds (binary, (n,)) or log-probabilities (n, k).
+
+        Probabilities are converted at full resolution: the binary log-odds is
+        ``log p1 - log p0`` from both columns, so probabilities that differ only far in the tail
+        (1e-30 versus 1e-40, as naive Bayes produces) keep their order. Only exact zeros are
+        replaced, by the smallest positive float. Parametric maps see the scores clipped later
+        (see :meth:`_map_input`).
+        """
         binary = len(self.classes_) == 2
         if self.response_ == "decision_function":
             if binary:
                 return values.ravel() if values.ndim == 1 else values[:, -1] - values[:, 0]
             return values
+        lp = np.log(np.maximum(values, _TINY))
         if binary:
-            return proba_to_log_odds(values[:, 1], clip=self.clip)
-        return np.log(np.maximum(values, self.clip))
+            return lp[:, 1] - lp[:, 0]
+        return lp
 
     def _one_vs_rest_scores(self, scores: np.ndarray) -> np.ndarray:
-        """Per-class binary scores for one-vs-rest maps."""
+        """Per-class binary scores (log-odds of each class against the rest)."""
         if self.response_ == "decision_function":
             return scores
-        lp = log_softmax(scores, axis=1)
-        lo, hi = np.log(self.clip), np.log1p(-self.clip)
-        lp = np.clip(lp, lo, hi)
-        return lp - _log1mexp(lp)
+        out = np.empty_like(scores)
+        for k in range(scores.shape[1]):
+            out[:, k] = scores[:, k] - logsumexp(np.delete(scores, k, axis=1), axis=1)
+        return out
+
+    def _map_input(self, cal: CalibrationMap, scores: np.ndarray) -> np.ndarray:
+        """What a map sees: order-based maps the full-resolution scores; parametric maps, for
+        probability outputs, log-odds clipped to ``±logit(1 - clip)`` (log-probabilities floored
+        at ``log(clip)``) so that a few extreme, confidently wrong rows cannot dominate the fit.
+        """
+        if self.response_ == "decision_function" or isinstance(cal, _ORDER_BASED):
+            return scores
+        if scores.ndim == 1:
+            bound = np.log1p(-self.clip) - np.log(self.clip)
+            return np.clip(scores, -bound, bound)
+        return np.maximum(scores, np.log(self.clip))
 
     # -- maps ----------------------------------------------------------------------------------
     def _fit_map(self, template: CalibrationMap, scores, y_index, w):
         if scores.ndim == 1:
-            return clone(template).fit(scores, y_index, sample_weight=w)
+            return clone(template).fit(self._map_input(template, scores), y_index, sample_weight=w)
         if template.supports_multiclass:
-            return clone(template).fit(scores, np.asarray(y_index), sample_weight=w)
+            return clone(template).fit(
+                self._map_input(template, scores), np.asarray(y_index), sample_weight=w
+            )
         ovr = self._one_vs_rest_scores(scores)
         maps = []
         for k in range(scores.shape[1]):
@@ -230,7 +256,9 @@ class CalibrationWrapper(HeldOutClassifierBase):
                 # fitted; its calibrated probability is the share it has there (0 or 1).
                 maps.append(float(wk_pos > 0))
                 continue
-            maps.append(clone(template).fit(ovr[:, k], yk, sample_weight=w))
+            maps.append(
+                clone(template).fit(self._map_input(template, ovr[:, k]), yk, sample_weight=w)
+            )
         if any(isinstance(m, float) for m in maps):
             warnings.warn(
                 "Some classes have no held-out rows; their calibrated probability is set to 0.",
@@ -241,13 +269,15 @@ class CalibrationWrapper(HeldOutClassifierBase):
 
     def _apply_map(self, calibrator, scores: np.ndarray) -> np.ndarray:
         if scores.ndim == 1:
-            q = calibrator.predict(scores)
+            q = calibrator.predict(self._map_input(calibrator, scores))
             return np.column_stack([1.0 - q, q])
         if not isinstance(calibrator, list):
-            return calibrator.predict(scores)
+            return calibrator.predict(self._map_input(calibrator, scores))
         ovr = self._one_vs_rest_scores(scores)
         cols = [
-            np.full(scores.shape[0], m) if isinstance(m, float) else m.predict(ovr[:, k])
+            np.full(scores.shape[0], m)
+            if isinstance(m, float)
+            else m.predict(self._map_input(m, ovr[:, k]))
             for k, m in enumerate(calibrator)
         ]
         q = np.column_stack(cols)
