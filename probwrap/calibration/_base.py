@@ -64,6 +64,8 @@ class CalibrationMap(BaseEstimator):
         y = np.asarray(y)
         if y.ndim == 0:
             raise ValueError(f"`y` must be 1-d of shape (n,); got a scalar {y!r}.")
+        if y.dtype.kind == "f" and np.isnan(y).any():
+            raise ValueError("`y` contains NaN; labels must be known for every row.")
         check_same_length(("scores", s), ("y", y))
         w = check_sample_weight(sample_weight, s.shape[0])
         if s.ndim == 1:

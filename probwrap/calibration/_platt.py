@@ -72,10 +72,16 @@ def _weighted_logistic(
 
 
 def _separated(s: np.ndarray, y: np.ndarray, w: np.ndarray) -> bool:
-    """Whether the positive-weight rows are (quasi-)completely separated by the score."""
+    """Whether the positive-weight rows are (quasi-)completely separated by the score.
+
+    Separation: a cut-off puts every negative on one side and every positive on the other
+    (ties at the cut-off allowed), with at least one row strictly on each side of it.
+    """
     pos = s[(y == 1) & (w > 0)]
     neg = s[(y == 0) & (w > 0)]
-    return bool(neg.max() <= pos.min() or pos.max() <= neg.min())
+    up = neg.max() <= pos.min() and pos.max() > neg.min()
+    down = pos.max() <= neg.min() and neg.max() > pos.min()
+    return bool(up or down)
 
 
 class PlattMap(CalibrationMap):
