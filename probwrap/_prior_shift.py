@@ -1,0 +1,313 @@
+"""PriorShiftWrapper: re-weight a classifier's posteriors to new class priors."""
+
+from __future__ import annotations
+
+import numbers
+import warnings
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+from sklearn.utils.validation import check_is_fitted
+
+from ._heldout import HeldOutClassifierBase
+from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
+from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
+
+__all__ = ["PriorShiftWrapper"]
+
+
+class PriorShiftWrapper(HeldOutClassifierBase):
+    """Correct a classifier's probabilities for a change of class priors (prior / label shift).
+
+    Under prior shift the class-conditional feature distributions stay the same and only the
+    share of each class changes — a season, a new market, a screening programme. Bayes' rule
+    then corrects the posteriors exactly once the new priors are known (Saerens, Latinne &
+    Decaestecker 2002, eq. 2.4), and the new priors can be estimated from unlabelled rows.
+
+    ``fit`` obtains held-out predictions of ``estimator`` (cross-fitting, or none for a
+    :class:`~sklearn.frozen.FrozenEstimator`), records the weighted class frequencies
+    (``source_prior_``), fits a bias-corrected calibration on the held-out posteriors and
+    records their confusion matrix. ``adapt(X)`` estimates the class priors of unlabelled rows.
+    ``predict_proba`` then returns the calibrated posteriors re-weighted to the new priors —
+    to ``target_prior`` when it is given, otherwise to the priors found by ``adapt``. With
+    neither it returns the estimator's probabilities unchanged.
+
+    The correction is only as good as the prior-shift assumption: if what changed is how the
+    features relate to the outcome (a new product, a new measuring device), re-weighting priors
+    does not repair it. Check the adapted probabilities on labelled rows as soon as some
+    arrive. Where decisions affect people, follow local regulation and professional practice.
+
+    Parameters
+    ----------
+    estimator : classifier with ``predict_proba``
+        The model; wrap it in :class:`~sklearn.frozen.FrozenEstimator` if it is already fitted
+        (then every row given to ``fit`` is held-out data).
+    target_prior : array-like of shape (n_classes,), dict or None, default=None
+        Known class priors of the deployment population: an array in ``classes_`` order, a
+        dict keyed by class label, or (binary only) a float, the prevalence of ``classes_[1]``.
+        When given it takes precedence over the priors estimated by ``adapt``.
+    method : {"em", "bbse", "bbse_soft", "acc", "pacc"}, default="em"
+        How ``adapt`` estimates the priors: maximum likelihood by EM (Saerens et al. 2002),
+        black-box shift estimation with the hard or soft confusion matrix (Lipton, Wang & Smola
+        2018), adjusted classify-and-count (Forman 2008) or its probabilistic form (Bella et al.
+        2010). See :mod:`probwrap.shift`.
+    calibration : {"bcts", "vector", None}, default="bcts"
+        Calibration fitted on the held-out posteriors before estimating and adjusting:
+        bias-corrected temperature scaling or vector scaling (Alexandari, Kundaje & Shrikumar
+        2020), or none (for an estimator that is already calibrated).
+    n_resamples : int, default=200
+        Bootstrap resamples for ``target_prior_interval_`` (0: no interval).
+    confidence_level : float, default=0.95
+    em_tol : float, default=1e-6
+        EM tolerance: stop when no prior moves by more than this in one step.
+    em_max_iter : int, default=1000
+        EM iteration cap; reaching it warns (ConvergenceWarning).
+    cv : int, splitter or iterable, default=5
+        Cross-fitting folds (ignored for a frozen estimator).
+    n_jobs : int, default=None
+        Parallel folds.
+    random_state : int, RandomState or None, default=None
+        Seeds the folds and the bootstrap.
+
+    Attributes
+    ----------
+    estimator_ : estimator
+        The fitted (or frozen) estimator.
+    classes_ : ndarray of shape (n_classes,)
+    source_prior_ : ndarray of shape (n_classes,)
+        Class frequencies of the training rows, weighted by ``sample_weight``.
+    confusion_matrix_ : ndarray of shape (n_classes, n_classes)
+        Joint confusion matrix of the calibrated held-out predictions, rows predicted, columns
+        true, entries summing to one.
+    calibrator_ : BiasCorrectedScaling or None
+        The calibration used for estimation and adjustment.
+    prior_estimator_ : probwrap.shift.PriorEstimator
+        The array-core estimator behind ``adapt`` and ``monitor``.
+    target_prior_ : ndarray of shape (n_classes,)
+        Priors estimated by the last ``adapt`` (set by ``adapt`` only).
+    target_prior_interval_ : ndarray of shape (n_classes, 2) or None
+        Bootstrap interval of ``target_prior_`` (set by ``adapt``).
+    shift_pvalue_ : float
+        p-value of the likelihood-ratio test of "no shift" on the ``adapt`` rows.
+    shift_statistic_ : float
+        Its statistic (chi-square with ``n_classes - 1`` degrees of freedom under no shift).
+
+    Examples
+    --------
+    >>> from sklearn.linear_model import LogisticRegression
+    >>> from sklearn.pipeline import make_pipeline
+    >>> from sklearn.preprocessing import StandardScaler
+    >>> from probwrap._prior_shift import PriorShiftWrapper
+    >>> from probwrap.datasets import make_parcels
+    >>> summer = make_parcels(4000, season="summer", random_state=0)
+    >>> winter = make_parcels(4000, season="winter", random_state=1)
+    >>> base = make_pipeline(StandardScaler(), LogisticRegression())
+    >>> model = PriorShiftWrapper(base, n_resamples=50, random_state=0)
+    >>> model = model.fit(summer.data, summer.target)
+    >>> _ = model.adapt(winter.data)
+    >>> bool(model.target_prior_[1] > model.source_prior_[1]), bool(model.shift_pvalue_ < 0.01)
+    (True, True)
+    """
+
+    _heldout_response = "predict_proba"
+
+    def __init__(
+        self,
+        estimator: Any = None,
+        *,
+        target_prior: Any = None,
+        method: str = "em",
+        calibration: str | None = "bcts",
+        n_resamples: int = 200,
+        confidence_level: float = 0.95,
+        em_tol: float = 1e-6,
+        em_max_iter: int = 1000,
+        cv: Any = 5,
+        n_jobs: int | None = None,
+        random_state: Any = None,
+    ) -> None:
+        self.estimator = estimator
+        self.target_prior = target_prior
+        self.method = method
+        self.calibration = calibration
+        self.n_resamples = n_resamples
+        self.confidence_level = confidence_level
+        self.em_tol = em_tol
+        self.em_max_iter = em_max_iter
+        self.cv = cv
+        self.n_jobs = n_jobs
+        self.random_state = random_state
+
+    # -- parameters ------------------------------------------------------------------------------
+    def _check_params(self) -> None:
+        if self.method not in PRIOR_METHODS:
+            raise ValueError(f"`method` must be one of {PRIOR_METHODS}; got {self.method!r}.")
+        if self.calibration not in CALIBRATIONS:
+            raise ValueError(
+                f"`calibration` must be one of {CALIBRATIONS}; got {self.calibration!r}."
+            )
+
+    def _resolve_target_prior(self) -> np.ndarray | None:
+        prior = self.target_prior
+        if prior is None:
+            return None
+        classes = self.classes_
+        k = classes.shape[0]
+        if isinstance(prior, Mapping):
+            known = {c.item() if hasattr(c, "item") else c for c in classes}
+            unknown = [key for key in prior if key not in known]
+            if unknown:
+                raise ValueError(
+                    f"`target_prior` has keys {unknown} that are not class labels; the classes "
+                    f"are {classes.tolist()}."
+                )
+            missing = [c for c in classes.tolist() if c not in prior]
+            if missing:
+                raise ValueError(
+                    f"`target_prior` has no entry for class(es) {missing}; give one per class."
+                )
+            prior = [prior[c] for c in classes.tolist()]
+        elif isinstance(prior, numbers.Real) and not isinstance(prior, bool) and k != 2:
+            raise ValueError(
+                f"`target_prior` is a single number, which is only meaningful for two classes; "
+                f"give one entry per class in classes_ order ({classes.tolist()})."
+            )
+        return check_prior(prior, k, name="target_prior")
+
+    # -- fitting ---------------------------------------------------------------------------------
+    def fit(self, X: Any, y: Any, sample_weight: Any = None, **fit_params: Any) -> PriorShiftWrapper:
+        """Fit the estimator (cross-fitted), the calibration and the source summary.
+
+        Parameters
+        ----------
+        X : array-like, DataFrame, sparse matrix, ...
+            Whatever the wrapped estimator accepts; passed to it untouched.
+        y : array-like of shape (n,)
+            Labels.
+        sample_weight : array-like of shape (n,), default=None
+            Row weights; passed to the estimator where it accepts them, and used for
+            ``source_prior_``, the calibration and the confusion matrix.
+        **fit_params : dict
+            Further parameters for the estimator's ``fit``.
+
+        Returns
+        -------
+        self
+        """
+        self._check_params()
+        ho = self._fit_heldout(X, y, sample_weight, fit_params)
+        est = PriorEstimator(
+            self.method,
+            calibration=self.calibration,
+            tol=self.em_tol,
+            max_iter=self.em_max_iter,
+            n_resamples=self.n_resamples,
+            confidence_level=self.confidence_level,
+            random_state=self.random_state,
+        )
+        est.fit(ho.values, ho.y_index, ho.sample_weight)
+        self.prior_estimator_ = est
+        self.source_prior_ = est.source_prior_
+        self.confusion_matrix_ = est.confusion_
+        self.calibrator_ = est.calibrator_
+        self.known_prior_ = self._resolve_target_prior()
+        for name in ("target_prior_", "target_prior_interval_", "shift_pvalue_", "shift_statistic_"):
+            if hasattr(self, name):
+                delattr(self, name)
+        return self
+
+    # -- adaptation ------------------------------------------------------------------------------
+    def _check_features(self, X: Any, what: str) -> None:
+        shape = getattr(X, "shape", None)
+        n_in = getattr(self, "n_features_in_", None)
+        if n_in is not None and shape is not None and len(shape) == 2 and shape[1] != n_in:
+            raise ValueError(
+                f"`X` {what} has {shape[1]} features, but {type(self).__name__} is expecting "
+                f"{n_in} features as input (the number it was fitted on)."
+            )
+
+    def adapt(self, X: Any, sample_weight: Any = None) -> PriorShiftWrapper:
+        """Estimate the class priors of unlabelled rows and adjust to them.
+
+        Parameters
+        ----------
+        X : array-like, DataFrame, sparse matrix, ...
+            Unlabelled rows from the deployment population, in the estimator's input format.
+        sample_weight : array-like of shape (n,), default=None
+            Frequency weights of the rows.
+
+        Returns
+        -------
+        self
+            With ``target_prior_``, ``target_prior_interval_``, ``shift_pvalue_`` and
+            ``shift_statistic_`` set. Unless ``target_prior`` is given, ``predict_proba`` now
+            adjusts to ``target_prior_``.
+        """
+        check_is_fitted(self, "prior_estimator_")
+        self._check_features(X, "passed to adapt")
+        proba = self._inner_output(X, "predict_proba")
+        est = self.prior_estimator_
+        rs = self.random_state
+        res = est.estimate(proba, sample_weight, random_state=rs)
+        self.target_prior_ = res.prior
+        self.target_prior_interval_ = res.interval
+        self.shift_pvalue_ = res.shift_pvalue
+        self.shift_statistic_ = res.shift_statistic
+        if self.known_prior_ is not None:
+            warnings.warn(
+                "`target_prior` is set, so predict_proba keeps adjusting to it; the estimate "
+                "from adapt is stored in target_prior_ for comparison. Set target_prior=None to "
+                "use the estimate.",
+                UserWarning,
+                stacklevel=2,
+            )
+        return self
+
+    def monitor(
+        self,
+        X: Any,
+        batches: Any = None,
+        *,
+        batch_size: int | None = None,
+        sample_weight: Any = None,
+    ) -> np.ndarray:
+        """Estimate the class priors batch by batch (for example week by week).
+
+        Does not change the wrapper. Returns the structured array of
+        :func:`probwrap.shift.prior_by_batch` (fields ``batch``, ``n_rows``, ``prior``,
+        ``lower``, ``upper``, ``shift_statistic``, ``shift_pvalue``, ``converged``), with
+        columns of ``prior`` in ``classes_`` order.
+        """
+        check_is_fitted(self, "prior_estimator_")
+        self._check_features(X, "passed to monitor")
+        proba = self._inner_output(X, "predict_proba")
+        return prior_by_batch(
+            self.prior_estimator_, proba, batches, batch_size=batch_size,
+            sample_weight=sample_weight,
+        )
+
+    # -- prediction ------------------------------------------------------------------------------
+    def _prior_in_use(self) -> np.ndarray | None:
+        if self.known_prior_ is not None:
+            return self.known_prior_
+        return getattr(self, "target_prior_", None)
+
+    def predict_proba(self, X: Any) -> np.ndarray:
+        """Class probabilities adjusted to the target priors, shape (n, n_classes).
+
+        Before ``adapt`` and without ``target_prior`` these are the estimator's own
+        probabilities, unchanged.
+        """
+        check_is_fitted(self, "prior_estimator_")
+        proba = self._inner_output(X, "predict_proba")
+        prior = self._prior_in_use()
+        if prior is None:
+            return proba
+        calibrated = self.prior_estimator_.calibrate(proba)
+        return adjust_to_prior(calibrated, self.source_prior_, prior)
+
+    def predict(self, X: Any) -> np.ndarray:
+        """Class with the largest adjusted probability."""
+        check_is_fitted(self, "prior_estimator_")
+        return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
