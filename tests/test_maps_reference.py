@@ -127,6 +127,20 @@ def test_isotonic_matches_scikit_learn_with_weights_and_ties():
         np.testing.assert_allclose(m.values_, ref.predict(m.thresholds_), atol=1e-12)
 
 
+def test_isotonic_large_sample_matches_scikit_learn():
+    # 1e5 rows with ties: exercises both the vectorised pooling rounds and the stack pass;
+    # scikit-learn IsotonicRegression(out_of_bounds="clip") is the reference
+    rng = np.random.default_rng(11)
+    n = 100_000
+    s = np.round(rng.normal(size=n), 3)
+    y = (rng.random(n) < expit(s)).astype(float)
+    w = rng.uniform(0.1, 2.0, size=n)
+    grid = np.linspace(-5, 5, 2001)
+    got = IsotonicMap().fit(s, y, sample_weight=w).predict(grid)
+    ref = IsotonicRegression(out_of_bounds="clip").fit(s, y, sample_weight=w).predict(grid)
+    np.testing.assert_allclose(got, ref, atol=1e-12)
+
+
 def test_isotonic_on_bundled_data_matches_scikit_learn(cancer_scores):
     s, y = cancer_scores
     w = _weights(s.shape[0], seed=3)
