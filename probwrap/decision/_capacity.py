@@ -133,8 +133,7 @@ def fit_action_budget(
         return ActionBudget(a, cap, 0.0, float(w[mask].sum() / total), False)
     rows = _SortedRows(saving[mask], None)
     wm = w[mask]
-    zeros = np.zeros_like(wm)
-    _, flagged, _ = rows.curve(zeros, zeros, wm)
+    _, flagged, _ = rows.curve(np.zeros(wm.shape[0]), 0.0, wm[rows.order])
     share = flagged / total
     j = int(np.argmax(share <= cap * (1 + 1e-12)))
     return ActionBudget(a, cap, float(rows.mid[j]), float(share[j]), True)

@@ -127,21 +127,13 @@ def _binary_targets(y: Any, n: int) -> np.ndarray:
     if arr.ndim != 1:
         raise ValueError(f"`y` must be 1-d of shape (n,); got shape {arr.shape}.")
     if arr.dtype.kind == "b":
-        arr = arr.astype(int)
-    if arr.dtype.kind not in "iuf" or not np.all(np.isin(arr, (0, 1))):
+        arr = arr.astype(np.int8)
+    if arr.dtype.kind not in "iuf" or not np.all((arr == 0) | (arr == 1)):
         raise ValueError(
             "`y` must hold binary targets coded 0 (negative) and 1 (positive); got values "
             f"{np.unique(arr)[:5].tolist()}."
         )
     return arr.astype(np.intp)
-
-
-def _row_costs(matrix: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Cost of the negative action (c0) and the positive action (c1) for each row."""
-    if matrix.ndim == 2:
-        return matrix[y, 0], matrix[y, 1]
-    rows = np.arange(y.shape[0])
-    return matrix[rows, y, 0], matrix[rows, y, 1]
 
 
 class _SortedRows:
@@ -150,10 +142,12 @@ class _SortedRows:
     def __init__(self, scores: np.ndarray, score_bounds: tuple[float, float] | None) -> None:
         self.order = np.argsort(scores)
         ss = scores[self.order]
-        last = np.empty(ss.shape[0], dtype=bool)
+        n = ss.shape[0]
+        last = np.empty(n, dtype=bool)
         np.not_equal(ss[1:], ss[:-1], out=last[:-1])
         last[-1] = True
         self.ends = np.flatnonzero(last)
+        self.n = n
         u = ss[self.ends]
         m = u.shape[0]
         gap = (u[-1] - u[0]) / (m - 1) if m > 1 else 1.0
@@ -166,24 +160,80 @@ class _SortedRows:
                 hi_ext = score_bounds[1]
         # Decision j (j = 0..m) is "positive action for rows scoring above lower[j]"; any cutoff
         # in [lower[j], upper[j]) produces it.
-        self.lower = np.concatenate([[lo_ext], u])
-        self.upper = np.concatenate([u, [hi_ext]])
+        self.lower = np.empty(m + 1)
+        self.lower[0] = lo_ext
+        self.lower[1:] = u
+        self.upper = np.empty(m + 1)
+        self.upper[:-1] = u
+        self.upper[-1] = hi_ext
         self.mid = 0.5 * (self.lower + self.upper)
 
-    def curve(self, c0w: np.ndarray, c1w: np.ndarray, w: np.ndarray) -> tuple:
-        """Total cost and flagged weight of every decision, from row costs already weighted."""
-        o = self.order
+    def curve(
+        self, d_sorted: np.ndarray, total_flag_all: float, w_sorted: np.ndarray | None
+    ) -> tuple[np.ndarray, np.ndarray, float]:
+        """Total cost and flagged weight of every decision.
+
+        ``d_sorted`` holds, in score order, each row's weighted cost of the negative action minus
+        that of the positive one; ``total_flag_all`` is the total cost when every row takes the
+        positive action; ``w_sorted`` are the weights in score order (None: all ones).
+        """
         total = np.empty(self.ends.shape[0] + 1)
-        total[0] = c1w.sum()
-        cum = np.cumsum(c0w[o] - c1w[o])
-        total[1:] = total[0] + cum[self.ends]
-        cw = np.cumsum(w[o])
-        weight = cw[-1]
+        total[0] = total_flag_all
+        cum = np.cumsum(d_sorted)
+        np.add(total_flag_all, cum[self.ends], out=total[1:])
         flagged = np.empty_like(total)
+        if w_sorted is None:
+            weight = float(self.n)
+            np.subtract(weight, self.ends + 1.0, out=flagged[1:])
+        else:
+            cw = np.cumsum(w_sorted)
+            weight = float(cw[-1])
+            np.subtract(weight, cw[self.ends], out=flagged[1:])
         flagged[0] = weight
-        flagged[1:] = weight - cw[self.ends]
         flagged[-1] = 0.0
         return total, flagged, weight
+
+
+class _RowCosts:
+    """Per-row costs of the two actions, in a form that is cheap to put in score order."""
+
+    def __init__(self, matrix: np.ndarray, y: np.ndarray, w: np.ndarray | None) -> None:
+        self.w = w
+        self.matrix = matrix
+        self.y = y
+        if matrix.ndim == 2:
+            self.dvals = matrix[:, 0] - matrix[:, 1]
+            self.y8 = y.astype(np.int8)
+            counts = np.bincount(y, weights=w, minlength=2)
+            self.total_flag_all = float(np.dot(counts, matrix[:, 1]))
+        else:
+            self.dvals = None
+            wc1 = self.c1 if w is None else self.c1 * w
+            self.total_flag_all = float(wc1.sum())
+
+    @property
+    def c0(self) -> np.ndarray:
+        if self.matrix.ndim == 2:
+            return self.matrix[self.y, 0]
+        return self.matrix[np.arange(self.y.shape[0]), self.y, 0]
+
+    @property
+    def c1(self) -> np.ndarray:
+        if self.matrix.ndim == 2:
+            return self.matrix[self.y, 1]
+        return self.matrix[np.arange(self.y.shape[0]), self.y, 1]
+
+    def sorted_inputs(self, rows: _SortedRows):
+        o = rows.order
+        if self.dvals is not None and self.w is None:
+            d_sorted = self.dvals[self.y8[o]]
+        else:
+            d = self.c0 - self.c1
+            if self.w is not None:
+                d = d * self.w
+            d_sorted = d[o]
+        w_sorted = None if self.w is None else self.w[o]
+        return d_sorted, self.total_flag_all, w_sorted
 
 
 def _pick_optimum(
@@ -194,9 +244,13 @@ def _pick_optimum(
     Returns ``(index, value, low, high, flat)`` where ``index`` is the decision that contains
     the chosen value.
     """
-    c = np.where(admissible, cost, np.inf)
+    if admissible.all():
+        c = cost
+        scale = max(abs(float(cost.max())), abs(float(cost.min())))
+    else:
+        c = np.where(admissible, cost, np.inf)
+        scale = float(np.max(np.abs(cost[admissible])))
     best = c.min()
-    scale = np.max(np.abs(cost[admissible])) if admissible.any() else 1.0
     tol = 1e-9 * max(scale, 1e-300)
     opt = np.flatnonzero(c <= best + tol)
     breaks = np.flatnonzero(np.diff(opt) > 1)
@@ -221,9 +275,10 @@ def _prepare(scores, y, costs, sample_weight):
             f"`costs` must have two actions (negative, positive) for a cutoff; got "
             f"{matrix.shape[-1]}. Use tune_class_offsets for more actions."
         )
-    w = check_sample_weight(sample_weight, n)
-    c0, c1 = _row_costs(matrix, yi)
-    return s, yi, w, c0, c1
+    w = None if sample_weight is None else check_sample_weight(sample_weight, n)
+    if w is not None and np.all(w == 1.0):
+        w = None
+    return s, yi, w, matrix
 
 
 def search_cutoff(
@@ -276,13 +331,15 @@ def search_cutoff(
     >>> res.cutoff, res.cost, res.interval
     (0.25, 0.25, (0.1, 0.4))
     """
-    s, yi, w, c0, c1 = _prepare(scores, y, costs, sample_weight)
-    return _search_rows(s, c0, c1, w, check_capacity(capacity), _check_bounds(score_bounds))
+    s, yi, w, matrix = _prepare(scores, y, costs, sample_weight)
+    return _search_rows(
+        s, _RowCosts(matrix, yi, w), check_capacity(capacity), _check_bounds(score_bounds)
+    )
 
 
-def _search_rows(s, c0, c1, w, cap, bounds) -> CutoffSearchResult:
+def _search_rows(s, row_costs: _RowCosts, cap, bounds) -> CutoffSearchResult:
     rows = _SortedRows(s, bounds)
-    total, flagged, weight = rows.curve(c0 * w, c1 * w, w)
+    total, flagged, weight = rows.curve(*row_costs.sorted_inputs(rows))
     cost = total / weight
     share = flagged / weight
     admissible = np.ones_like(share, dtype=bool) if cap is None else share <= cap * (1 + 1e-12)
@@ -322,10 +379,11 @@ def capacity_cutoff(
     cap = check_capacity(capacity)
     if cap is None:
         raise ValueError("`capacity` must be a share of rows in (0, 1]; got None.")
-    w = check_sample_weight(sample_weight, s.shape[0])
+    w = None if sample_weight is None else check_sample_weight(sample_weight, s.shape[0])
     rows = _SortedRows(s, _check_bounds(score_bounds))
-    zeros = np.zeros_like(w)
-    _, flagged, weight = rows.curve(zeros, zeros, w)
+    _, flagged, weight = rows.curve(
+        np.zeros(s.shape[0]), 0.0, None if w is None else w[rows.order]
+    )
     j = int(np.argmax(flagged / weight <= cap * (1 + 1e-12)))
     return float(rows.mid[j])
 
@@ -377,7 +435,7 @@ def cutoff_interval(
     >>> bool(ci.low < 0.25 < ci.high)
     True
     """
-    s, yi, w, c0, c1 = _prepare(scores, y, costs, sample_weight)
+    s, yi, w, matrix = _prepare(scores, y, costs, sample_weight)
     cap = check_capacity(capacity)
     bounds = _check_bounds(score_bounds)
     if int(n_resamples) < 1:
@@ -389,14 +447,19 @@ def cutoff_interval(
     rng = check_random_state(random_state)
     rows = _SortedRows(s, bounds)
     n = s.shape[0]
-    c0w, c1w = c0 * w, c1 * w
+    rc = _RowCosts(matrix, yi, w)
+    w1 = np.ones(n) if w is None else w
+    d_sorted = ((rc.c0 - rc.c1) * w1)[rows.order]
+    c1w_sorted = (rc.c1 * w1)[rows.order]
+    w_sorted = w1[rows.order]
     found = np.empty(int(n_resamples))
     for b in range(int(n_resamples)):
+        # a row drawn c times gets c times its weight; counts are put in score order directly
         counts = np.bincount(rng.randint(0, n, size=n), minlength=n).astype(float)
-        total, flagged, weight = rows.curve(c0w * counts, c1w * counts, w * counts)
-        if weight <= 0:
-            found[b] = np.nan
-            continue
+        cs = counts[rows.order]
+        total, flagged, weight = rows.curve(
+            d_sorted * cs, float(np.dot(c1w_sorted, cs)), w_sorted * cs
+        )
         admissible = (
             np.ones(total.shape[0], dtype=bool)
             if cap is None
@@ -413,9 +476,11 @@ def cutoff_interval(
         check_same_length(("scores", s), ("fold", f))
         for k in np.unique(f[f >= 0]):
             mask = f == k
-            if not np.any(w[mask] > 0):
+            if not np.any(w1[mask] > 0):
                 continue
-            res = _search_rows(s[mask], c0[mask], c1[mask], w[mask], cap, bounds)
+            sub_w = None if w is None else w[mask]
+            sub_matrix = matrix if matrix.ndim == 2 else matrix[mask]
+            res = _search_rows(s[mask], _RowCosts(sub_matrix, yi[mask], sub_w), cap, bounds)
             fold_cutoffs.append(res.cutoff)
     fold_arr = np.asarray(fold_cutoffs, dtype=float)
     return CutoffInterval(
