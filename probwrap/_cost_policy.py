@@ -127,14 +127,14 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     Examples
     --------
     >>> from sklearn.linear_model import LogisticRegression
-    >>> from probwrap import CostPolicyWrapper
+    >>> from probwrap._cost_policy import CostPolicyWrapper
     >>> from probwrap.datasets import make_parcels
     >>> parcels = make_parcels(3000, random_state=0)
     >>> policy = CostPolicyWrapper(LogisticRegression(max_iter=1000),
     ...                            costs={"fp": 2.0, "fn": 35.0},
     ...                            actions=["ship", "inspect"])
     >>> policy.fit(parcels.data, parcels.target).predict(parcels.data[:3]).tolist()
-    ['ship', 'ship', 'ship']
+    ['inspect', 'ship', 'ship']
     >>> round(policy.cutoff_, 4)
     0.0541
     """
