@@ -121,6 +121,18 @@ def check_labels(y: Any, *, name: str = "y", classes: Any = None, min_classes: i
     if arr.dtype.kind == "f" and np.isnan(arr).any():
         raise ValueError(f"`{name}` contains NaN; labels must be known for every row.")
     if classes is None:
+        if arr.dtype.kind in "biuf":
+            # Fast path without a sort for numeric labels with at most two distinct values.
+            lo, hi = arr.min(), arr.max()
+            is_hi = arr == hi
+            if np.all(is_hi | (arr == lo)):
+                classes_arr = np.asarray([lo] if lo == hi else [lo, hi], dtype=arr.dtype)
+                if classes_arr.shape[0] < min_classes:
+                    raise ValueError(
+                        f"`{name}` contains only 1 class ({classes_arr.tolist()}); at least "
+                        f"{min_classes} classes are needed."
+                    )
+                return is_hi.astype(np.intp), classes_arr
         classes_arr = np.unique(arr)
         if classes_arr.shape[0] < min_classes:
             raise ValueError(
@@ -148,17 +160,12 @@ def check_binary_labels(y: Any, *, name: str = "y", classes: Any = None) -> tupl
 
     Returns ``(y01, classes)``. Raises when there are more or fewer than two distinct labels.
     """
-    if classes is None:
-        arr = np.asarray(y)
-        if arr.ndim == 2 and arr.shape[1] == 1:
-            arr = arr[:, 0]
-        distinct = np.unique(arr) if arr.ndim == 1 and arr.size else np.asarray([])
-        if distinct.shape[0] > 2:
-            raise ValueError(
-                f"`{name}` has {distinct.shape[0]} distinct labels {distinct[:5].tolist()}; a binary "
-                "map needs exactly two. Use a multiclass map or a calibration wrapper."
-            )
     idx, classes_arr = check_labels(y, name=name, classes=classes, min_classes=2)
+    if classes is None and classes_arr.shape[0] > 2:
+        raise ValueError(
+            f"`{name}` has {classes_arr.shape[0]} distinct labels {classes_arr[:5].tolist()}; a "
+            "binary map needs exactly two. Use a multiclass map or a calibration wrapper."
+        )
     if classes_arr.shape[0] != 2:
         raise ValueError(f"`{name}` must have exactly two classes; got {classes_arr.tolist()}.")
     return idx.astype(float), classes_arr

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+from scipy.optimize import isotonic_regression
 
 from ._base import NONPARAMETRIC, CalibrationMap
 
@@ -17,76 +18,43 @@ def _pool_ties(
     Rows of zero weight carry no information and are left out. Returns the distinct scores
     (increasing), the total weight of each and the weighted sum of the labels of each.
     """
+    if np.all(w == 1.0):
+        # Unit weights (the common case): sort the scores, and separately the scores of the
+        # positives, instead of an argsort followed by random-access gathers; the positives are
+        # then counted per distinct score. Same result, about half the memory traffic.
+        s = np.sort(scores)
+        first = np.ones(s.shape[0], dtype=bool)
+        np.not_equal(s[1:], s[:-1], out=first[1:])
+        starts = np.flatnonzero(first)
+        distinct = s if starts.shape[0] == s.shape[0] else s[starts]
+        weight = np.diff(np.append(starts, s.shape[0])).astype(float)
+        if np.all((y == 0.0) | (y == 1.0)):
+            pos = np.sort(scores[y == 1.0])
+            label_sum = np.bincount(
+                np.searchsorted(distinct, pos), minlength=distinct.shape[0]
+            ).astype(float)
+            return distinct, weight, label_sum
     keep = w > 0
-    if keep.all():
-        s, ww, wy = scores, w, w * y
-    else:
-        s, ww = scores[keep], w[keep]
-        wy = ww * y[keep]
-    order = np.argsort(s)
-    s, ww, wy = s[order], ww[order], wy[order]
+    sc, yy, ww = (scores, y, w) if keep.all() else (scores[keep], y[keep], w[keep])
+    order = np.argsort(sc)
+    s, ys, ww = sc[order], yy[order], ww[order]
     first = np.ones(s.shape[0], dtype=bool)
     np.not_equal(s[1:], s[:-1], out=first[1:])
     if first.all():  # no ties: nothing to pool
-        return s, ww, wy
+        return s, ww, ww * ys
     starts = np.flatnonzero(first)
     distinct = s[starts]
     weight = np.add.reduceat(ww, starts)
-    label_sum = np.add.reduceat(wy, starts)
+    label_sum = np.add.reduceat(ww * ys, starts)
     return distinct, weight, label_sum
-
-
-def _pav(weight: np.ndarray, label_sum: np.ndarray) -> np.ndarray:
-    """Weighted pool-adjacent-violators for an increasing fit; returns one value per input.
-
-    ``weight`` (all positive) and ``label_sum`` describe consecutive groups in score order; the
-    result minimises ``sum weight * (value - label_sum / weight)**2`` subject to non-decreasing
-    values.
-
-    Two stages, both exact. First, vectorised rounds that pool every run of adjacent violators
-    at once (two adjacent groups in decreasing order always share a value in the solution, so
-    pooling them is safe; see Best & Chakravarti 1990, Math. Programming 47, 425-439); they
-    run while they shrink the problem quickly. Then a single stack-based left-to-right pass,
-    O(number of remaining blocks), finishes the job.
-    """
-    sw = weight.astype(float)
-    sy = label_sum.astype(float)
-    count = np.ones(sw.shape[0], dtype=np.int64)
-    while sw.shape[0] > 1:
-        mean = sy / sw
-        violation = mean[:-1] > mean[1:]
-        if not violation.any():
-            break
-        starts = np.ones(sw.shape[0], dtype=bool)
-        starts[1:] = ~violation
-        ids = np.cumsum(starts) - 1
-        n_new = int(ids[-1]) + 1
-        sw = np.bincount(ids, weights=sw, minlength=n_new)
-        sy = np.bincount(ids, weights=sy, minlength=n_new)
-        count = np.bincount(ids, weights=count, minlength=n_new).astype(np.int64)
-        if n_new > 0.9 * starts.shape[0]:
-            break
-    # stack pass over the remaining blocks
-    st_w: list[float] = []
-    st_y: list[float] = []
-    st_c: list[int] = []
-    for bw, by, bc in zip(sw.tolist(), sy.tolist(), count.tolist(), strict=True):
-        while st_w and st_y[-1] * bw > by * st_w[-1]:  # previous mean > current mean
-            bw += st_w.pop()
-            by += st_y.pop()
-            bc += st_c.pop()
-        st_w.append(bw)
-        st_y.append(by)
-        st_c.append(bc)
-    values = np.asarray(st_y) / np.asarray(st_w)
-    return np.repeat(values, np.asarray(st_c, dtype=np.int64))
 
 
 class IsotonicMap(CalibrationMap):
     """Isotonic calibration: the best non-decreasing step map from log-odds to probability.
 
-    Fitted by our own weighted pool-adjacent-violators (PAV): one sort, tied scores pooled into
-    their weighted mean label, then the pooling pass. Only the order of the scores matters.
+    Fitted by weighted pool-adjacent-violators (PAV): one sort, tied scores pooled into their
+    weighted mean label (zero-weight rows left out), then one pooling pass over the distinct
+    scores (SciPy's compiled PAV). Only the order of the scores matters.
 
     Prediction interpolates linearly (in the score) between the fitted values at consecutive
     distinct training scores, like scikit-learn's ``IsotonicRegression``. Scores below the
@@ -128,7 +96,11 @@ class IsotonicMap(CalibrationMap):
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         distinct, weight, label_sum = _pool_ties(scores, y, w)
         self.thresholds_ = distinct
-        self.values_ = np.clip(_pav(weight, label_sum), 0.0, 1.0)
+        # The pooling pass itself is SciPy's compiled weighted PAV (scipy.optimize, since 1.12):
+        # one O(m) pass over the m distinct scores, an order of magnitude faster than a Python
+        # loop, which keeps the whole fit within a small multiple of the sort.
+        fit = isotonic_regression(label_sum / weight, weights=weight, increasing=True)
+        self.values_ = np.clip(fit.x, 0.0, 1.0)
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
         return np.interp(scores, self.thresholds_, self.values_)
