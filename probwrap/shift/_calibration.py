@@ -6,7 +6,6 @@ from typing import Any
 
 import numpy as np
 from scipy.optimize import minimize
-from scipy.special import log_softmax
 
 from .._validation import check_labels, check_same_length, check_sample_weight, check_scores
 from ..calibration._logodds import proba_to_log_proba
@@ -16,11 +15,17 @@ __all__ = ["BiasCorrectedScaling"]
 _KINDS = ("temperature", "vector")
 
 
+def _log_softmax(u: np.ndarray, axis: int = 1) -> np.ndarray:
+    """Row-wise log-softmax of a 2-d array (numerically stable)."""
+    shifted = u - u.max(axis=axis, keepdims=True)
+    return shifted - np.log(np.exp(shifted).sum(axis=axis, keepdims=True))
+
+
 def _hessian(z: np.ndarray, w: np.ndarray, n_scale: int):
     """Hessian of the weighted softmax log-loss in (scales, biases 1..k-1) at given logits."""
 
     def hess(logits: np.ndarray) -> np.ndarray:
-        p = np.exp(log_softmax(logits, axis=1))
+        p = np.exp(_log_softmax(logits, axis=1))
         pw = p * w[:, None]
         pz = p * z
         # bias block: sum_n w (diag p - p p^T)
@@ -157,7 +162,7 @@ class BiasCorrectedScaling:
 
         def loss_grad(theta: np.ndarray) -> tuple[float, np.ndarray]:
             a, b = unpack(theta)
-            logp = log_softmax(z * a + b, axis=1)
+            logp = _log_softmax(z * a + b, axis=1)
             loss = -float(np.sum(w * np.sum(onehot * logp, axis=1)))
             resid = (np.exp(logp) - onehot) * w[:, None]  # d loss / d logits
             g_a = np.sum(resid * z, axis=0)
@@ -206,7 +211,7 @@ class BiasCorrectedScaling:
                 f"`log_proba` has {z.shape[1]} columns but the scaling was fitted on "
                 f"{self.n_classes_}."
             )
-        return log_softmax(z * self.scale_ + self.bias_, axis=1)
+        return _log_softmax(z * self.scale_ + self.bias_, axis=1)
 
     def predict(self, proba: Any) -> np.ndarray:
         """Calibrated posteriors from posteriors of shape (n, k)."""
