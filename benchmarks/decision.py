@@ -30,7 +30,7 @@ from sklearn.linear_model import LogisticRegression
 from sklearn.metrics import confusion_matrix, make_scorer
 from sklearn.model_selection import TunedThresholdClassifierCV
 
-from probwrap._cost_policy import CostPolicyWrapper
+from probwrap import CostPolicyWrapper
 from probwrap.decision import realised_cost, search_cutoff
 
 COSTS = np.array([[0.0, 2.0], [35.0, 0.0]])  # rows: intact, damaged; columns: ship, inspect

@@ -19,8 +19,7 @@ from sklearn.linear_model import LogisticRegression
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from probwrap import CalibrationWrapper
-from probwrap._cost_policy import CostPolicyWrapper
+from probwrap import CalibrationWrapper, CostPolicyWrapper
 from probwrap.datasets import make_parcels
 from probwrap.decision import bayes_actions, realised_cost
 

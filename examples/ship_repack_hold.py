@@ -23,7 +23,7 @@ from sklearn.linear_model import LogisticRegression
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from probwrap._cost_policy import CostPolicyWrapper
+from probwrap import CostPolicyWrapper
 from probwrap.datasets import make_parcels
 from probwrap.decision import bayes_actions
 

@@ -108,13 +108,17 @@ class CalibrationWrapper(HeldOutClassifierBase):
     Examples
     --------
     >>> from sklearn.linear_model import LogisticRegression
+    >>> from sklearn.pipeline import make_pipeline
+    >>> from sklearn.preprocessing import StandardScaler
     >>> from probwrap import CalibrationWrapper
     >>> from probwrap.datasets import make_parcels
     >>> parcels = make_parcels(3000, random_state=0)
-    >>> model = CalibrationWrapper(LogisticRegression(max_iter=1000), method="platt",
-    ...                            random_state=0)
+    >>> base = make_pipeline(StandardScaler(), LogisticRegression())
+    >>> model = CalibrationWrapper(base, method="auto", random_state=0)
     >>> model.fit(parcels.data, parcels.target).predict_proba(parcels.data[:2]).shape
     (2, 2)
+    >>> model.method_ in model.method_scores_
+    True
     """
 
     _heldout_response = "auto"

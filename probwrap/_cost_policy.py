@@ -127,7 +127,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     Examples
     --------
     >>> from sklearn.linear_model import LogisticRegression
-    >>> from probwrap._cost_policy import CostPolicyWrapper
+    >>> from probwrap import CostPolicyWrapper
     >>> from probwrap.datasets import make_parcels
     >>> parcels = make_parcels(3000, random_state=0)
     >>> policy = CostPolicyWrapper(LogisticRegression(max_iter=1000),

@@ -22,7 +22,7 @@ from sklearn.model_selection import (
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from probwrap._cost_policy import CostPolicyWrapper
+from probwrap import CostPolicyWrapper
 from probwrap.decision import (
     add_reject_action,
     bayes_actions,

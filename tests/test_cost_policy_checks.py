@@ -5,7 +5,7 @@ from __future__ import annotations
 from sklearn.linear_model import LogisticRegression
 from sklearn.utils.estimator_checks import parametrize_with_checks
 
-from probwrap._cost_policy import CostPolicyWrapper
+from probwrap import CostPolicyWrapper
 
 
 def _base():

@@ -8,7 +8,7 @@ from sklearn.datasets import make_classification
 from sklearn.exceptions import NotFittedError
 from sklearn.linear_model import LogisticRegression
 
-from probwrap._cost_policy import CostPolicyWrapper
+from probwrap import CostPolicyWrapper
 from probwrap.decision import (
     add_reject_action,
     bayes_actions,
