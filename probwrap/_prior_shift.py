@@ -82,6 +82,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         true, entries summing to one.
     calibrator_ : BiasCorrectedScaling or None
         The calibration used for estimation and adjustment.
+    known_prior_ : ndarray of shape (n_classes,) or None
+        ``target_prior`` validated and put in ``classes_`` order (None when not given).
     prior_estimator_ : probwrap.shift.PriorEstimator
         The array-core estimator behind ``adapt`` and ``monitor``.
     target_prior_ : ndarray of shape (n_classes,)

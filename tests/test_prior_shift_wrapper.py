@@ -209,3 +209,31 @@ def test_very_few_unlabelled_rows_warn_and_stay_finite(fitted):
         warnings.simplefilter("error")
         out = m.predict_proba(gaussian_data(5, 0.3, rng)[0])
     assert np.all(np.isfinite(out))
+
+
+def test_adapt_weights_are_frequency_weights():
+    # A weight of 2 counts as a repeated row: same estimate and same likelihood-ratio test.
+    rng = np.random.default_rng(9)
+    X, y = gaussian_data(800, 0.3, rng)
+    m = PriorShiftWrapper(LogisticRegression(), n_resamples=0, random_state=0).fit(X, y)
+    X_new, _ = gaussian_data(300, 0.6, rng)
+    w = rng.integers(1, 4, size=300)
+    weighted = clone(m).fit(X, y).adapt(X_new, sample_weight=w)
+    repeated = clone(m).fit(X, y).adapt(np.repeat(X_new, w, axis=0))
+    np.testing.assert_allclose(weighted.target_prior_, repeated.target_prior_, atol=1e-6)
+    assert weighted.shift_statistic_ == pytest.approx(repeated.shift_statistic_, rel=1e-6)
+
+
+def test_dataframe_input_reaches_the_estimator_untouched():
+    pd = pytest.importorskip("pandas")
+    rng = np.random.default_rng(10)
+    X, y = gaussian_data(600, 0.3, rng)
+    frame = pd.DataFrame(X, columns=["fill_ratio"])
+    m = PriorShiftWrapper(LogisticRegression(), n_resamples=0).fit(frame, y)
+    assert list(m.feature_names_in_) == ["fill_ratio"]
+    new = pd.DataFrame(gaussian_data(400, 0.6, rng)[0], columns=["fill_ratio"])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no feature-name warning from the inner estimator
+        m.adapt(new)
+        proba = m.predict_proba(new)
+    assert proba.shape == (400, 2) and m.target_prior_[1] > 0.45
