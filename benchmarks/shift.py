@@ -29,7 +29,7 @@ from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 from sklearn.metrics import log_loss
 
-from probwrap._prior_shift import PriorShiftWrapper
+from probwrap import PriorShiftWrapper
 from probwrap.shift import adjust_to_prior
 
 MEAN1 = np.array([1.6, 0.8])

@@ -20,8 +20,7 @@ from sklearn.linear_model import LogisticRegression
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import SplineTransformer, StandardScaler
 
-from probwrap._cost_policy import CostPolicyWrapper
-from probwrap._prior_shift import PriorShiftWrapper
+from probwrap import CostPolicyWrapper, PriorShiftWrapper
 from probwrap.datasets import make_parcels
 from probwrap.shift import shift_cutoff
 

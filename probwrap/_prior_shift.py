@@ -100,7 +100,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     >>> from sklearn.linear_model import LogisticRegression
     >>> from sklearn.pipeline import make_pipeline
     >>> from sklearn.preprocessing import StandardScaler
-    >>> from probwrap._prior_shift import PriorShiftWrapper
+    >>> from probwrap import PriorShiftWrapper
     >>> from probwrap.datasets import make_parcels
     >>> summer = make_parcels(4000, season="summer", random_state=0)
     >>> winter = make_parcels(4000, season="winter", random_state=1)

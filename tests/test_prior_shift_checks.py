@@ -3,7 +3,7 @@
 from sklearn.naive_bayes import GaussianNB
 from sklearn.utils.estimator_checks import parametrize_with_checks
 
-from probwrap._prior_shift import PriorShiftWrapper
+from probwrap import PriorShiftWrapper
 
 # Gaussian naive Bayes is fast, deterministic and exact under sample weights (weight 2 equals a
 # repeated row), which the weighted-versus-repeated checks need.

@@ -12,7 +12,7 @@ from sklearn.base import clone
 from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 
-from probwrap._prior_shift import PriorShiftWrapper
+from probwrap import PriorShiftWrapper
 from probwrap.shift import adjust_to_prior
 
 
