@@ -1,0 +1,25 @@
+"""Display objects for calibration, cost, decision curves and prevalence (optional ``plot`` extra).
+
+Each display follows scikit-learn's plotting convention: build it with ``from_estimator`` or
+``from_predictions`` (which compute the numbers with :mod:`probwrap.metrics`,
+:mod:`probwrap.decision` or :mod:`probwrap.shift` and draw them), read the numbers from its
+attributes, and find the drawing in ``ax_`` and ``figure_``. matplotlib is imported only when
+something is drawn; figures are created without pyplot, so no window opens.
+"""
+
+from ._cost import CostCurveDisplay
+from ._decision_curve import DecisionCurveDisplay
+from ._intervals import consistency_band, wilson_interval
+from ._prevalence import PrevalenceDriftDisplay
+from ._reliability import ReliabilityDiagram
+from ._style import PALETTE
+
+__all__ = [
+    "PALETTE",
+    "CostCurveDisplay",
+    "DecisionCurveDisplay",
+    "PrevalenceDriftDisplay",
+    "ReliabilityDiagram",
+    "consistency_band",
+    "wilson_interval",
+]

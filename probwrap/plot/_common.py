@@ -1,0 +1,51 @@
+"""Helpers shared by the display objects."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+__all__ = ["positive_proba", "binary_labels"]
+
+
+def positive_proba(estimator: Any, X: Any, *, name: str = "estimator") -> np.ndarray:
+    """Probability of the second class (``classes_[1]``) from a fitted binary classifier."""
+    if not hasattr(estimator, "predict_proba"):
+        raise ValueError(
+            f"`{name}` ({type(estimator).__name__}) has no predict_proba; wrap it in "
+            "probwrap.CalibrationWrapper to turn its scores into probabilities."
+        )
+    proba = np.asarray(estimator.predict_proba(X), dtype=float)
+    if proba.ndim != 2 or proba.shape[1] != 2:
+        raise ValueError(
+            f"`{name}` must be a binary classifier; its predict_proba returned shape "
+            f"{proba.shape}."
+        )
+    return proba[:, 1]
+
+
+def binary_labels(y: Any, classes: Any = None, *, name: str = "y") -> np.ndarray:
+    """Labels as 0/1 floats; ``classes[1]`` (or the larger of two labels) is positive."""
+    arr = np.asarray(y)
+    if arr.ndim != 1:
+        raise ValueError(f"`{name}` must be 1-d; got shape {arr.shape}.")
+    if classes is None:
+        classes = np.unique(arr)
+        if classes.shape[0] > 2:
+            raise ValueError(
+                f"`{name}` must hold two classes; got {classes.shape[0]}: {classes[:5].tolist()}."
+            )
+        if classes.shape[0] == 1:
+            if classes[0] in (0, 1, True, False):
+                return (arr == 1).astype(float)
+            raise ValueError(f"`{name}` holds a single class {classes[0]!r}; cannot tell which is positive.")
+    classes = np.asarray(classes)
+    unknown = ~np.isin(arr, classes)
+    if unknown.any():
+        raise ValueError(f"`{name}` holds labels not among the classes {classes.tolist()}.")
+    return (arr == classes[1]).astype(float)
+
+
+def estimator_classes(estimator: Any) -> Any:
+    return getattr(estimator, "classes_", None)

@@ -1,0 +1,141 @@
+"""Per-bin uncertainty for reliability diagrams: Wilson intervals and consistency bands."""
+
+from __future__ import annotations
+
+import numbers
+from typing import Any
+
+import numpy as np
+from scipy.stats import norm
+from sklearn.utils import check_random_state
+
+__all__ = ["wilson_interval", "consistency_band"]
+
+
+def _check_level(confidence_level: Any) -> float:
+    if (
+        isinstance(confidence_level, bool)
+        or not isinstance(confidence_level, numbers.Real)
+        or not 0.0 < float(confidence_level) < 1.0
+    ):
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+    return float(confidence_level)
+
+
+def wilson_interval(
+    successes: Any, n: Any, confidence_level: float = 0.95
+) -> tuple[np.ndarray, np.ndarray]:
+    """Wilson (1927) score interval for binomial proportions.
+
+    ``(p + z^2/(2n) -+ z sqrt(p(1-p)/n + z^2/(4n^2))) / (1 + z^2/n)`` with ``p = successes / n``
+    and ``z`` the two-sided normal quantile. ``successes`` and ``n`` may be non-integer (weighted
+    counts); ``n`` is then the total weight of the bin.
+
+    Parameters
+    ----------
+    successes : array-like
+        Number (or weight) of positives per bin.
+    n : array-like
+        Number (or weight) of rows per bin, positive.
+    confidence_level : float, default=0.95
+
+    Returns
+    -------
+    low, high : ndarray
+
+    Examples
+    --------
+    >>> from probwrap.plot import wilson_interval
+    >>> low, high = wilson_interval(3, 10)
+    >>> round(float(low), 4), round(float(high), 4)
+    (0.1078, 0.6032)
+    """
+    level = _check_level(confidence_level)
+    k = np.asarray(successes, dtype=float)
+    m = np.asarray(n, dtype=float)
+    if not np.all(np.isfinite(m)) or np.any(m <= 0):
+        raise ValueError("`n` must be positive and finite in every bin.")
+    if not np.all(np.isfinite(k)) or np.any(k < 0) or np.any(k > m * (1 + 1e-12)):
+        raise ValueError("`successes` must lie in [0, n] in every bin.")
+    z = norm.ppf(0.5 + level / 2.0)
+    p = np.clip(k / m, 0.0, 1.0)
+    denom = 1.0 + z * z / m
+    centre = (p + z * z / (2.0 * m)) / denom
+    half = z * np.sqrt(p * (1.0 - p) / m + z * z / (4.0 * m * m)) / denom
+    return np.clip(centre - half, 0.0, 1.0), np.clip(centre + half, 0.0, 1.0)
+
+
+def consistency_band(
+    y_prob: Any,
+    bin_index: Any,
+    n_bins: int,
+    *,
+    sample_weight: Any = None,
+    confidence_level: float = 0.95,
+    n_draws: int = 1000,
+    random_state: Any = 0,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Consistency band of a reliability diagram by resampling (Bröcker & Smith 2007).
+
+    If the forecasts were calibrated, each outcome would be a Bernoulli draw with its own
+    forecast probability. The band is the central ``confidence_level`` range of the observed
+    frequency in each bin over ``n_draws`` such simulated outcome vectors; an observed frequency
+    outside the band is evidence of miscalibration in that bin.
+
+    Parameters
+    ----------
+    y_prob : array-like of shape (n,)
+        Forecast probabilities.
+    bin_index : array-like of int of shape (n,)
+        Bin of each forecast, in ``[0, n_bins)``.
+    n_bins : int
+        Number of bins.
+    sample_weight : array-like of shape (n,), optional
+        Row weights (the simulated frequency is the weighted share of simulated positives).
+    confidence_level : float, default=0.95
+    n_draws : int, default=1000
+        Simulated outcome vectors.
+    random_state : int, RandomState or None, default=0
+        Seed.
+
+    Returns
+    -------
+    low, high : ndarray of shape (n_bins,)
+        NaN for bins without weight.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.plot import consistency_band
+    >>> low, high = consistency_band(np.full(50, 0.3), np.zeros(50, dtype=int), 1)
+    >>> bool(low[0] < 0.3 < high[0])
+    True
+    """
+    level = _check_level(confidence_level)
+    p = np.asarray(y_prob, dtype=float).ravel()
+    idx = np.asarray(bin_index).ravel()
+    if idx.shape != p.shape:
+        raise ValueError(
+            f"`bin_index` must have one entry per forecast ({p.shape[0]}); got {idx.shape[0]}."
+        )
+    if not np.all((p >= 0) & (p <= 1)):
+        raise ValueError("`y_prob` must hold probabilities in [0, 1].")
+    if isinstance(n_draws, bool) or not isinstance(n_draws, numbers.Integral) or n_draws < 2:
+        raise ValueError(f"`n_draws` must be a whole number >= 2; got {n_draws!r}.")
+    idx = idx.astype(np.intp)
+    if idx.size and (idx.min() < 0 or idx.max() >= n_bins):
+        raise ValueError(f"`bin_index` must lie in [0, {n_bins}).")
+    w = np.ones_like(p) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    rng = check_random_state(random_state)
+    weight = np.bincount(idx, weights=w, minlength=n_bins)
+    freq = np.empty((int(n_draws), n_bins))
+    for d in range(int(n_draws)):
+        hits = rng.uniform(size=p.shape[0]) < p
+        with np.errstate(invalid="ignore", divide="ignore"):
+            freq[d] = np.bincount(idx, weights=w * hits, minlength=n_bins) / weight
+    alpha = 1.0 - level
+    low, high = np.quantile(freq, [alpha / 2.0, 1.0 - alpha / 2.0], axis=0)
+    empty = weight <= 0
+    low[empty] = np.nan
+    high[empty] = np.nan
+    return low, high
