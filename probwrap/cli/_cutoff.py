@@ -1,0 +1,222 @@
+"""``probwrap cutoff``: the cost-optimal cutoff of a labelled score file, with its uncertainty.
+
+The numbers are those of :func:`probwrap.decision.search_cutoff` (the exact minimum of the
+empirical cost over every distinct score) and :func:`probwrap.decision.cutoff_interval` (a
+bootstrap interval of that cutoff), on the rows of the file as given.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+from typing import Any
+
+import numpy as np
+
+from ._calibrate import add_scale_flag, read_labels, read_scores, whole_number
+from ._common import read_table
+
+__all__ = ["register", "cutoff_summary"]
+
+
+def _finite_number(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"must be finite; got {text}")
+    return value
+
+
+def _share(text: str) -> float:
+    value = _finite_number(text)
+    if not 0.0 < value <= 1.0:
+        raise argparse.ArgumentTypeError(f"must be a share of rows in (0, 1]; got {text}")
+    return value
+
+
+def _level(text: str) -> float:
+    value = _finite_number(text)
+    if not 0.0 < value < 1.0:
+        raise argparse.ArgumentTypeError(f"must be in (0, 1); got {text}")
+    return value
+
+
+def cutoff_summary(
+    scores: np.ndarray,
+    y: np.ndarray,
+    costs: dict[str, float],
+    *,
+    scale: str = "proba",
+    capacity: float | None = None,
+    n_resamples: int = 200,
+    confidence_level: float = 0.95,
+    seed: int | None = 0,
+) -> dict[str, Any]:
+    """Everything ``probwrap cutoff`` reports, as a JSON-ready dictionary.
+
+    Parameters
+    ----------
+    scores : ndarray of shape (n,)
+        Held-out scores (probabilities, or log-odds with ``scale="log-odds"``).
+    y : ndarray of shape (n,)
+        0/1 labels.
+    costs : dict
+        Binary shorthand ``{"tp", "fp", "fn", "tn"}``.
+    scale : {"proba", "log-odds"}
+    capacity : float, optional
+        Largest share of rows that may be flagged.
+    n_resamples, confidence_level, seed
+        Bootstrap settings of :func:`probwrap.decision.cutoff_interval`.
+
+    Returns
+    -------
+    dict
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.cli._cutoff import cutoff_summary
+    >>> s = np.array([0.1, 0.4, 0.4, 0.8])
+    >>> out = cutoff_summary(s, np.array([0, 0, 1, 1]), {"fp": 1.0, "fn": 4.0}, n_resamples=20)
+    >>> out["cutoff"], out["expected_cost"], out["cutoff_range"]
+    (0.25, 0.25, [0.1, 0.4])
+    """
+    from probwrap.decision import binary_cost_matrix, cutoff_interval, plugin_cutoff, search_cutoff
+
+    matrix = binary_cost_matrix(costs)
+    bounds = (0.0, 1.0) if scale == "proba" else None
+    res = search_cutoff(scores, y, matrix, capacity=capacity, score_bounds=bounds)
+    ci = cutoff_interval(
+        scores, y, matrix, capacity=capacity, score_bounds=bounds, n_resamples=n_resamples,
+        confidence_level=confidence_level, random_state=seed,
+    )
+    flagged = float(np.mean(scores > res.cutoff))
+    realised = matrix[y, 1]
+    out: dict[str, Any] = {
+        "n_rows": int(scores.shape[0]),
+        "n_positive": int(y.sum()),
+        "score_scale": scale,
+        "costs": {key: float(costs.get(key, 0.0)) for key in ("tp", "fp", "fn", "tn")},
+        "capacity": capacity,
+        "cutoff": float(res.cutoff),
+        "cutoff_range": [float(res.interval[0]), float(res.interval[1])],
+        "cutoff_interval": [float(ci.low), float(ci.high)],
+        "confidence_level": float(confidence_level),
+        "n_resamples": int(n_resamples),
+        "expected_cost": float(res.cost),
+        "flagged_share": flagged,
+        "cost_flag_none": float(np.mean(matrix[y, 0])),
+        # acting on every row breaks any capacity below 1
+        "cost_flag_all": float(np.mean(realised)) if capacity in (None, 1.0) else None,
+    }
+    if scale == "proba":
+        try:
+            bayes = plugin_cutoff(matrix)
+        except ValueError:
+            bayes = None
+        out["bayes_cutoff"] = bayes
+        for name, cut in (("cost_at_half", 0.5), ("cost_at_bayes_cutoff", bayes)):
+            if cut is None:
+                out[name] = None
+                continue
+            action = (scores > cut).astype(np.intp)
+            share = float(action.mean())
+            over = capacity is not None and share > capacity
+            out[name] = None if over else float(np.mean(matrix[y, action]))
+    return out
+
+
+def _text(out: dict[str, Any], path: str) -> str:
+    level = round(100 * out["confidence_level"])
+    costs = ", ".join(f"{k}={v:g}" for k, v in out["costs"].items())
+    lines = [
+        f"cost-optimal cutoff for {path}: {out['n_rows']} rows, {out['n_positive']} positive",
+        f"  costs                 {costs}"
+        + (f"; capacity {out['capacity']:g} of rows" if out["capacity"] is not None else ""),
+        f"  cutoff                {out['cutoff']:.6g}   (act when score > cutoff)",
+        f"  same cost for         [{out['cutoff_range'][0]:.6g}, {out['cutoff_range'][1]:.6g})",
+        f"  {level}% interval          [{out['cutoff_interval'][0]:.6g}, "
+        f"{out['cutoff_interval'][1]:.6g}]   (bootstrap, {out['n_resamples']} resamples)",
+        f"  expected cost per row {out['expected_cost']:.6g}",
+        f"  share flagged         {out['flagged_share']:.4g}",
+        f"  acting on no row      {out['cost_flag_none']:.6g}",
+    ]
+    if out["cost_flag_all"] is not None:
+        lines.append(f"  acting on every row   {out['cost_flag_all']:.6g}")
+    if out["score_scale"] == "proba":
+        bayes = out["bayes_cutoff"]
+
+        def cost(v: float | None) -> str:
+            return "over capacity" if v is None else f"{v:.6g}"
+
+        lines.append(f"  at cutoff 0.5         {cost(out['cost_at_half'])}")
+        if bayes is not None:
+            lines.append(
+                f"  at Bayes cutoff {bayes:.4g}  {cost(out['cost_at_bayes_cutoff'])}   "
+                "(right for calibrated probabilities)"
+            )
+    return "\n".join(lines)
+
+
+def _run(args: argparse.Namespace) -> int:
+    frame = read_table(args.scores)
+    scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
+    y, _ = read_labels(frame, args.label_column, args.scores, positive=args.positive_label)
+    costs = {"tp": args.cost_tp, "fp": args.cost_fp, "fn": args.cost_fn, "tn": args.cost_tn}
+    out = cutoff_summary(
+        scores, y, costs, scale=args.scale, capacity=args.capacity, n_resamples=args.resamples,
+        confidence_level=args.confidence, seed=args.seed,
+    )
+    if args.format == "json":
+        print(json.dumps(out, indent=2, allow_nan=False))
+    else:
+        print(_text(out, args.scores))
+    return 0
+
+
+def register(subparsers: Any) -> None:
+    """Add the ``cutoff`` verb."""
+    parser = subparsers.add_parser(
+        "cutoff",
+        help="cost-optimal cutoff of a labelled score file, with its interval and cost",
+        description="The cutoff with the least cost on a labelled score file (act on rows whose "
+        "score is above it), a bootstrap interval for it, and the expected cost per row. "
+        "Costs are per row and may be negative (gains).",
+    )
+    parser.add_argument("--scores", required=True, metavar="FILE", help="CSV or Parquet file")
+    parser.add_argument("--score-column", required=True, metavar="C", help="column of scores")
+    parser.add_argument("--label-column", required=True, metavar="L", help="column of labels")
+    parser.add_argument(
+        "--positive-label", metavar="VALUE", default=None,
+        help="which label is the positive class (default: 1/True, else the second in sorted "
+        "order)",
+    )
+    add_scale_flag(parser)
+    for key, what in (
+        ("fp", "acting on a negative row (e.g. an inspection that finds nothing)"),
+        ("fn", "not acting on a positive row (e.g. a damaged delivery)"),
+        ("tp", "acting on a positive row (default 0)"),
+        ("tn", "not acting on a negative row (default 0)"),
+    ):
+        parser.add_argument(
+            f"--cost-{key}", type=_finite_number, required=key in ("fp", "fn"),
+            default=0.0, metavar="X", help=f"cost of {what}",
+        )
+    parser.add_argument(
+        "--capacity", type=_share, default=None, metavar="SHARE",
+        help="largest share of rows that may be acted on, e.g. 0.1",
+    )
+    parser.add_argument(
+        "--resamples", type=whole_number(1), default=200, metavar="N",
+        help="bootstrap resamples for the interval (default 200)",
+    )
+    parser.add_argument(
+        "--confidence", type=_level, default=0.95, metavar="LEVEL",
+        help="coverage of the interval (default 0.95)",
+    )
+    parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
+    parser.add_argument("--format", choices=("text", "json"), default="text")
+    parser.set_defaults(func=_run)

@@ -1,0 +1,283 @@
+"""``probwrap prevalence``: the share of positives in an unlabelled batch of scores.
+
+Two ways in:
+
+* ``--source-prevalence P``: the scores are taken as calibrated probabilities for a population
+  with prevalence ``P``; the new prevalence is the maximum-likelihood (EM) estimate of
+  :func:`probwrap.shift.em_prior`, its interval a bootstrap of the unlabelled rows.
+* ``--reference FILE --label-column L``: a labelled file of held-out scores from the same model.
+  :class:`probwrap.shift.PriorEstimator` learns from it (recalibrating the scores, and the
+  confusion matrices for ``bbse``, ``acc`` and ``pacc``), then estimates the batch's prevalence
+  with a bootstrap interval over both files.
+
+Both report the likelihood-ratio test of "the prevalence has not moved"
+(:func:`probwrap.shift.shift_test`).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import warnings
+from typing import Any
+
+import numpy as np
+
+from ._calibrate import add_scale_flag, read_labels, read_scores, whole_number
+from ._common import read_table
+from ._cutoff import _level
+
+__all__ = ["register", "prevalence_from_source", "prevalence_from_reference"]
+
+
+def _prevalence(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not 0.0 < value < 1.0:
+        raise argparse.ArgumentTypeError(f"must be a share strictly between 0 and 1; got {text}")
+    return value
+
+
+def _two_columns(p: np.ndarray) -> np.ndarray:
+    return np.column_stack([1.0 - p, p])
+
+
+def prevalence_from_source(
+    proba: np.ndarray,
+    source_prevalence: float,
+    *,
+    n_resamples: int = 200,
+    confidence_level: float = 0.95,
+    seed: int | None = 0,
+) -> dict[str, Any]:
+    """EM prevalence of unlabelled rows whose probabilities hold for ``source_prevalence``.
+
+    The interval is a percentile bootstrap of the unlabelled rows, widened where needed to
+    contain the Clopper-Pearson interval of as many labelled rows (as
+    :meth:`probwrap.shift.PriorEstimator.estimate` does).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.cli._prevalence import prevalence_from_source
+    >>> p = np.array([0.1, 0.1, 0.2, 0.9])
+    >>> out = prevalence_from_source(p, 0.325, n_resamples=20)
+    >>> round(out["prevalence"], 3), out["shift_pvalue"] > 0.9
+    (0.325, True)
+    """
+    from sklearn.utils import check_random_state
+
+    from probwrap.shift import binomial_interval, em_prior, shift_test
+
+    p2 = _two_columns(proba)
+    src = np.array([1.0 - source_prevalence, source_prevalence])
+    point = em_prior(p2, src)
+    test = shift_test(p2, src)
+    out = _result(point.prior[1], point.converged, "em", proba.shape[0], source_prevalence, test)
+    if n_resamples > 0:
+        rng = check_random_state(seed)
+        n = proba.shape[0]
+        draws = np.empty(n_resamples)
+        init = point.prior if np.all(point.prior > 0) else None
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            for b in range(n_resamples):
+                counts = np.bincount(rng.randint(0, n, size=n), minlength=n).astype(float)
+                draws[b] = em_prior(p2, src, sample_weight=counts, init=init).prior[1]
+        alpha = 1.0 - confidence_level
+        lo, hi = np.quantile(draws, [alpha / 2, 1 - alpha / 2])
+        cp = binomial_interval(point.prior[1], float(n), confidence_level)
+        out["interval"] = [
+            float(min(lo, cp[0], point.prior[1])), float(max(hi, cp[1], point.prior[1]))
+        ]
+    return out
+
+
+def prevalence_from_reference(
+    proba: np.ndarray,
+    ref_proba: np.ndarray,
+    ref_y: np.ndarray,
+    *,
+    method: str = "em",
+    recalibrate: bool = True,
+    n_resamples: int = 200,
+    confidence_level: float = 0.95,
+    seed: int | None = 0,
+) -> dict[str, Any]:
+    """Prevalence of unlabelled rows by :class:`probwrap.shift.PriorEstimator`.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.cli._prevalence import prevalence_from_reference
+    >>> rng = np.random.default_rng(0)
+    >>> ref = rng.uniform(0.01, 0.99, size=400)
+    >>> y = (rng.uniform(size=400) < ref).astype(int)
+    >>> out = prevalence_from_reference(rng.uniform(0.3, 0.99, size=300), ref, y,
+    ...                                 n_resamples=0)
+    >>> out["prevalence"] > out["source_prevalence"], out["shift_pvalue"] < 1e-6
+    (True, True)
+    """
+    from probwrap.shift import PriorEstimator, shift_test
+
+    est = PriorEstimator(
+        method,
+        calibration="bcts" if recalibrate else None,
+        n_resamples=n_resamples,
+        confidence_level=confidence_level,
+        random_state=seed,
+    ).fit(_two_columns(ref_proba), ref_y)
+    res = est.estimate(_two_columns(proba))
+    test = shift_test(est.calibrate(_two_columns(proba)), est.source_prior_)
+    out = _result(
+        res.prior[1], res.converged, method, proba.shape[0], float(est.source_prior_[1]), test
+    )
+    if res.interval is not None:
+        out["interval"] = [float(res.interval[1, 0]), float(res.interval[1, 1])]
+    out["recalibrated"] = bool(recalibrate)
+    out["n_reference_rows"] = int(ref_y.shape[0])
+    return out
+
+
+def _result(prev, converged, method, n, source, test) -> dict[str, Any]:
+    return {
+        "prevalence": float(prev),
+        "interval": None,
+        "source_prevalence": float(source),
+        "method": method,
+        "converged": bool(converged),
+        "n_rows": int(n),
+        "shift_statistic": float(test.statistic),
+        "shift_pvalue": float(test.pvalue),
+    }
+
+
+def _text(out: dict[str, Any], path: str, level: float) -> str:
+    lines = [
+        f"prevalence of {path}: {out['n_rows']} unlabelled rows, method {out['method']}",
+        f"  estimated prevalence  {out['prevalence']:.4f}",
+    ]
+    if out["interval"] is not None:
+        lo, hi = out["interval"]
+        lines.append(f"  {round(100 * level)}% interval          [{lo:.4f}, {hi:.4f}]")
+    lines += [
+        f"  source prevalence     {out['source_prevalence']:.4f}"
+        + (f"   (reference file, {out['n_reference_rows']} rows)" if "n_reference_rows" in out
+           else ""),
+        f"  test of no shift      statistic {out['shift_statistic']:.4g}, "
+        f"p-value {out['shift_pvalue']:.3g}",
+    ]
+    if not out["converged"]:
+        lines.append("  note: the estimate's iterations did not converge; treat it with care")
+    return "\n".join(lines)
+
+
+def _run(args: argparse.Namespace) -> int:
+    frame = read_table(args.unlabelled)
+    proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale)
+    if args.scale == "log-odds":
+        from probwrap.calibration import log_odds_to_proba
+
+        proba = log_odds_to_proba(proba)
+    settings = {
+        "n_resamples": args.resamples, "confidence_level": args.confidence, "seed": args.seed,
+    }
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        if args.reference is None:
+            out = prevalence_from_source(proba, args.source_prevalence, **settings)
+        else:
+            ref = read_table(args.reference)
+            ref_column = args.reference_score_column or args.score_column
+            ref_scores = read_scores(ref, ref_column, args.reference, scale=args.scale)
+            if args.scale == "log-odds":
+                ref_scores = log_odds_to_proba(ref_scores)
+            ref_y, _ = read_labels(
+                ref, args.label_column, args.reference, positive=args.positive_label
+            )
+            out = prevalence_from_reference(
+                proba, ref_scores, ref_y, method=args.method,
+                recalibrate=not args.no_recalibration, **settings,
+            )
+    seen = set()
+    for w in caught:
+        message = " ".join(str(w.message).split())
+        if message not in seen:
+            seen.add(message)
+            print(f"probwrap prevalence: warning: {message}", file=sys.stderr)
+    if args.format == "json":
+        print(json.dumps(out, indent=2, allow_nan=False))
+    else:
+        print(_text(out, args.unlabelled, args.confidence))
+    return 0
+
+
+def register(subparsers: Any) -> None:
+    """Add the ``prevalence`` verb."""
+    parser = subparsers.add_parser(
+        "prevalence",
+        help="estimate the share of positives in an unlabelled batch of scores",
+        description="Estimate the prevalence (share of positives) of an unlabelled batch from "
+        "its scores, with an interval and a test of whether it moved. Give either the "
+        "prevalence the scores were calibrated for (--source-prevalence) or a labelled "
+        "reference file of held-out scores from the same model (--reference).",
+    )
+    parser.add_argument("--unlabelled", required=True, metavar="FILE", help="CSV or Parquet")
+    parser.add_argument("--score-column", required=True, metavar="C", help="column of scores")
+    add_scale_flag(parser)
+    source = parser.add_mutually_exclusive_group(required=True)
+    source.add_argument(
+        "--source-prevalence", type=_prevalence, metavar="P",
+        help="prevalence of the population the scores are calibrated for, e.g. 0.04",
+    )
+    source.add_argument(
+        "--reference", metavar="FILE",
+        help="labelled CSV or Parquet file of held-out scores from the same model",
+    )
+    parser.add_argument(
+        "--label-column", metavar="L", help="column of labels in the reference file"
+    )
+    parser.add_argument(
+        "--reference-score-column", metavar="C", default=None,
+        help="score column of the reference file (default: the --score-column name)",
+    )
+    parser.add_argument(
+        "--positive-label", metavar="VALUE", default=None,
+        help="which reference label is the positive class (default: 1/True, else the second "
+        "in sorted order)",
+    )
+    parser.add_argument(
+        "--method", choices=("em", "bbse", "acc", "pacc"), default="em",
+        help="maximum likelihood (em, default), black-box shift estimation (bbse), adjusted "
+        "classify-and-count (acc) or its probabilistic form (pacc); all but em need --reference",
+    )
+    parser.add_argument(
+        "--no-recalibration", action="store_true",
+        help="with --reference: use the scores as they are instead of recalibrating them on "
+        "the reference rows (bias-corrected temperature scaling)",
+    )
+    parser.add_argument(
+        "--resamples", type=whole_number(0), default=200, metavar="N",
+        help="bootstrap resamples for the interval (default 200; 0 skips the interval)",
+    )
+    parser.add_argument(
+        "--confidence", type=_level, default=0.95, metavar="LEVEL",
+        help="coverage of the interval (default 0.95)",
+    )
+    parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
+    parser.add_argument("--format", choices=("text", "json"), default="text")
+
+    def run(args: argparse.Namespace) -> int:
+        if args.reference is None:
+            if args.method != "em":
+                parser.error(f"--method {args.method} needs --reference (a labelled file)")
+            if args.label_column is not None or args.no_recalibration:
+                parser.error("--label-column and --no-recalibration go with --reference")
+        elif args.label_column is None:
+            parser.error("--reference needs --label-column")
+        return _run(args)
+
+    parser.set_defaults(func=run)
