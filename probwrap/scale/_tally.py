@@ -1,0 +1,424 @@
+"""Mergeable score tallies: weighted label counts per fine bin of the log-odds scale.
+
+A :class:`ScoreTally` summarises any number of rows of (score, label, weight) by the weighted
+count of every label in each bin of width ``resolution`` on the score (log-odds) scale, plus the
+weighted sum of the scores in the bin. Tallies of disjoint chunks of rows merge by addition, so
+they can be built block by block (NumPy chunks, Dask blocks on a cluster) and combined in any
+order; only the occupied bins are stored.
+
+Bins are centred on the multiples of ``resolution``: bin ``b`` holds the scores in
+``[(b - 1/2) r, (b + 1/2) r)``. Each bin is represented by the weighted mean of its scores (which
+lies inside the bin). :meth:`ScoreTally.to_rows` turns a tally into weighted rows — one per
+(bin, label) with positive weight — that every sample-weight-aware routine of probwrap accepts:
+the calibration maps, :func:`probwrap.decision.search_cutoff`, the metrics and the prior
+estimators. Weights count as row frequencies there, so these fits are fits to the binned data.
+"""
+
+from __future__ import annotations
+
+import numbers
+from typing import Any
+
+import numpy as np
+from scipy.special import expit
+
+from .._validation import check_same_length, check_sample_weight, check_scores
+
+__all__ = ["DEFAULT_RESOLUTION", "ScoreTally", "merge_tallies", "tally_scores"]
+
+#: Default bin width on the log-odds scale. Replacing every score by its bin's mean changes the
+#: log loss of a fitted Platt, beta or temperature map by far less than 1e-4 at this width (the
+#: change is of second order in the width), while a score range of +-30 needs at most 60 001 bins.
+DEFAULT_RESOLUTION = 1e-3
+
+# Largest |score / resolution| that still fits comfortably into int64 bin indices.
+_MAX_INDEX = 2.0**62
+
+
+def _check_resolution(resolution: Any) -> float:
+    if (
+        isinstance(resolution, bool)
+        or not isinstance(resolution, numbers.Real)
+        or not np.isfinite(resolution)
+        or resolution <= 0
+    ):
+        raise ValueError(f"`resolution` must be a positive finite number; got {resolution!r}.")
+    return float(resolution)
+
+
+def _check_n_labels(n_labels: Any) -> int:
+    if (
+        isinstance(n_labels, bool)
+        or not isinstance(n_labels, numbers.Integral)
+        or n_labels < 1
+    ):
+        raise ValueError(f"`n_labels` must be a positive integer; got {n_labels!r}.")
+    return int(n_labels)
+
+
+class ScoreTally:
+    """Weighted label counts per bin of width ``resolution`` on the score scale.
+
+    Build one with :func:`tally_scores`; combine tallies of disjoint rows with ``+`` or
+    :func:`merge_tallies`.
+
+    Parameters
+    ----------
+    bins : ndarray of int64, shape (m,)
+        Occupied bin indices, strictly increasing; bin ``b`` covers
+        ``[(b - 1/2) * resolution, (b + 1/2) * resolution)``.
+    counts : ndarray of shape (m, n_labels)
+        Weighted count of each label per bin (one column for an unlabelled tally).
+    score_sums : ndarray of shape (m,)
+        Weighted sum of the scores per bin.
+    resolution : float
+        Bin width.
+    n_rows : int
+        Number of rows tallied (whatever their weight).
+    labelled : bool
+        Whether the columns of ``counts`` are labels (False: a single column of weights of
+        unlabelled rows).
+
+    Examples
+    --------
+    >>> from probwrap.scale import tally_scores
+    >>> t = tally_scores([0.0, 0.0004, 1.0], [0, 1, 1], resolution=0.001)
+    >>> t.n_bins, t.counts.tolist()
+    (2, [[1.0, 1.0], [0.0, 1.0]])
+    >>> s, y, w = t.to_rows()
+    >>> s.round(4).tolist(), y.tolist(), w.tolist()
+    ([0.0002, 0.0002, 1.0], [0, 1, 1], [1.0, 1.0, 1.0])
+    """
+
+    def __init__(
+        self,
+        bins: np.ndarray,
+        counts: np.ndarray,
+        score_sums: np.ndarray,
+        resolution: float,
+        n_rows: int,
+        labelled: bool = True,
+    ) -> None:
+        self.bins = np.asarray(bins, dtype=np.int64)
+        self.counts = np.asarray(counts, dtype=float)
+        self.score_sums = np.asarray(score_sums, dtype=float)
+        self.resolution = _check_resolution(resolution)
+        self.n_rows = int(n_rows)
+        self.labelled = bool(labelled)
+        if self.counts.ndim != 2 or self.counts.shape[0] != self.bins.shape[0]:
+            raise ValueError(
+                f"`counts` must have shape ({self.bins.shape[0]}, n_labels); got "
+                f"{self.counts.shape}."
+            )
+        if self.score_sums.shape != self.bins.shape:
+            raise ValueError(
+                f"`score_sums` must have shape {self.bins.shape}; got {self.score_sums.shape}."
+            )
+
+    # -- summaries -------------------------------------------------------------------------
+    @property
+    def n_bins(self) -> int:
+        """Number of occupied bins."""
+        return int(self.bins.shape[0])
+
+    @property
+    def n_labels(self) -> int:
+        """Number of label columns (1 for an unlabelled tally)."""
+        return int(self.counts.shape[1])
+
+    @property
+    def bin_weight(self) -> np.ndarray:
+        """Total weight per bin, shape (m,)."""
+        return self.counts.sum(axis=1)
+
+    @property
+    def total_weight(self) -> float:
+        """Total weight of all tallied rows."""
+        return float(self.counts.sum())
+
+    @property
+    def label_weight(self) -> np.ndarray:
+        """Total weight of each label, shape (n_labels,)."""
+        return self.counts.sum(axis=0)
+
+    @property
+    def bin_edges(self) -> np.ndarray:
+        """Lower and upper edge of every occupied bin, shape (m, 2)."""
+        r = self.resolution
+        return np.column_stack([(self.bins - 0.5) * r, (self.bins + 0.5) * r])
+
+    @property
+    def bin_scores(self) -> np.ndarray:
+        """Representative score of every bin: the weighted mean of its scores, shape (m,)."""
+        mean = self.score_sums / self.bin_weight
+        edges = self.bin_edges
+        return np.clip(mean, edges[:, 0], np.nextafter(edges[:, 1], -np.inf))
+
+    # -- turning a tally into weighted rows -----------------------------------------------------
+    def to_rows(
+        self, positive: int | None = None, *, proba: bool = False
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Weighted rows ``(scores, labels, weights)`` that stand for the tallied rows.
+
+        One row per bin and label with positive weight; its score is the bin's representative
+        score (the weighted mean score of the bin, the same for every label of the bin, so that
+        order-based fits and cutoff searches never separate rows of one bin).
+
+        Parameters
+        ----------
+        positive : int, default=None
+            Return binary labels, 1 for label index ``positive`` and 0 for every other label
+            (one-vs-rest). By default the label indices themselves are returned.
+        proba : bool, default=False
+            Return two-column probabilities ``[1 - expit(s), expit(s)]`` instead of the
+            log-odds scores (for the prior estimators, ECE and Brier score).
+
+        Returns
+        -------
+        scores : ndarray of shape (r,) or (r, 2)
+        labels : ndarray of int of shape (r,)
+        weights : ndarray of shape (r,)
+        """
+        if not self.labelled:
+            raise ValueError(
+                "This tally holds unlabelled rows; use to_scores() for their scores and weights."
+            )
+        counts = self.counts
+        if positive is not None:
+            if not (isinstance(positive, numbers.Integral) and 0 <= positive < self.n_labels):
+                raise ValueError(
+                    f"`positive` must be a label index in 0..{self.n_labels - 1}; got "
+                    f"{positive!r}."
+                )
+            pos = counts[:, positive]
+            counts = np.column_stack([counts.sum(axis=1) - pos, pos])
+            counts[:, 0] = np.maximum(counts[:, 0], 0.0)
+        rep = self.bin_scores
+        keep = counts > 0
+        bin_idx, label = np.nonzero(keep)
+        scores = rep[bin_idx]
+        weights = counts[bin_idx, label]
+        if proba:
+            scores = _two_column_proba(scores)
+        return scores, label.astype(int), weights
+
+    def to_scores(self, *, proba: bool = False) -> tuple[np.ndarray, np.ndarray]:
+        """One weighted row per bin, whatever the labels: ``(scores, weights)``.
+
+        With ``proba=True`` the scores are two-column probabilities, as in :meth:`to_rows`.
+        """
+        rep = self.bin_scores
+        return (_two_column_proba(rep) if proba else rep), self.bin_weight
+
+    # -- merging ---------------------------------------------------------------------------
+    def merge(self, other: ScoreTally) -> ScoreTally:
+        """Tally of the rows of both tallies (they must share resolution and labels)."""
+        if not isinstance(other, ScoreTally):
+            raise ValueError(f"`other` must be a ScoreTally; got {type(other).__name__}.")
+        if other.resolution != self.resolution:
+            raise ValueError(
+                f"Tallies with different resolutions cannot be merged ({self.resolution!r} and "
+                f"{other.resolution!r})."
+            )
+        if other.n_labels != self.n_labels or other.labelled != self.labelled:
+            raise ValueError(
+                f"Tallies with different label columns cannot be merged ({self.n_labels} "
+                f"{'labelled' if self.labelled else 'unlabelled'} and {other.n_labels} "
+                f"{'labelled' if other.labelled else 'unlabelled'})."
+            )
+        bins = np.concatenate([self.bins, other.bins])
+        uniq, inv = np.unique(bins, return_inverse=True)
+        m = uniq.shape[0]
+        counts = np.concatenate([self.counts, other.counts])
+        merged = np.column_stack(
+            [np.bincount(inv, weights=counts[:, j], minlength=m) for j in range(self.n_labels)]
+        )
+        sums = np.bincount(
+            inv, weights=np.concatenate([self.score_sums, other.score_sums]), minlength=m
+        )
+        return ScoreTally(
+            uniq, merged, sums, self.resolution, self.n_rows + other.n_rows, self.labelled
+        )
+
+    __add__ = merge
+
+    def __repr__(self) -> str:
+        kind = f"{self.n_labels} labels" if self.labelled else "unlabelled"
+        return (
+            f"ScoreTally({self.n_rows} rows, {self.n_bins} bins, {kind}, "
+            f"resolution={self.resolution!r})"
+        )
+
+
+def _two_column_proba(scores: np.ndarray) -> np.ndarray:
+    return np.column_stack([expit(-scores), expit(scores)])
+
+
+def _tally_block(
+    scores: Any,
+    y: Any,
+    sample_weight: Any,
+    n_labels: int,
+    resolution: float,
+) -> ScoreTally:
+    """Tally of one in-memory block (validated)."""
+    s = check_scores(scores, name="scores")
+    n = s.shape[0]
+    if n == 0:
+        return ScoreTally(
+            np.empty(0, np.int64), np.empty((0, n_labels)), np.empty(0), resolution, 0,
+            y is not None,
+        )
+    if y is not None:
+        y_arr = np.asarray(y)
+        check_same_length(("scores", s), ("y", y_arr))
+        if y_arr.ndim != 1:
+            raise ValueError(f"`y` must be 1-d of shape (n,); got shape {y_arr.shape}.")
+        if y_arr.dtype.kind == "b":
+            y_arr = y_arr.astype(int)
+        if y_arr.dtype.kind == "f":
+            if np.isnan(y_arr).any() or np.any(y_arr != np.round(y_arr)):
+                raise ValueError("`y` must hold integer label indices; got non-integer values.")
+            y_arr = y_arr.astype(np.int64)
+        if y_arr.dtype.kind not in "iu":
+            raise ValueError(
+                f"`y` must hold integer label indices 0..{n_labels - 1}; got dtype "
+                f"{y_arr.dtype}."
+            )
+        if y_arr.min() < 0 or y_arr.max() >= n_labels:
+            raise ValueError(
+                f"`y` must hold label indices in 0..{n_labels - 1}; got values from "
+                f"{y_arr.min()} to {y_arr.max()}."
+            )
+    if sample_weight is None:
+        w = np.ones(n)
+    else:
+        w = np.asarray(sample_weight, dtype=float)
+        if w.ndim != 1 or w.shape[0] != n:
+            raise ValueError(f"`sample_weight` has shape {w.shape} but the data have {n} rows.")
+        if not np.all(np.isfinite(w)) or np.any(w < 0):
+            raise ValueError("`sample_weight` must be finite and non-negative.")
+    scaled = s / resolution
+    if np.max(np.abs(scaled)) >= _MAX_INDEX:
+        raise ValueError(
+            f"`scores` reach {np.max(np.abs(s)):.3g}, too far out for bins of width "
+            f"{resolution!r}; use a coarser `resolution`."
+        )
+    b = np.floor(scaled + 0.5).astype(np.int64)
+    lo, hi = int(b.min()), int(b.max())
+    span = hi - lo + 1
+    if span <= 4 * n + 4096:
+        idx = b - lo
+        uniq = None
+        m = span
+    else:
+        uniq, idx = np.unique(b, return_inverse=True)
+        m = uniq.shape[0]
+    labels_of = np.zeros(n, dtype=np.int64) if y is None else y_arr.astype(np.int64)
+    cols = n_labels if y is not None else 1
+    counts = np.bincount(idx * cols + labels_of, weights=w, minlength=m * cols).reshape(m, cols)
+    sums = np.bincount(idx, weights=w * s, minlength=m)
+    occupied = counts.sum(axis=1) > 0
+    bins = (np.arange(lo, hi + 1, dtype=np.int64) if uniq is None else uniq)[occupied]
+    return ScoreTally(bins, counts[occupied], sums[occupied], resolution, n, y is not None)
+
+
+def merge_tallies(tallies: Any) -> ScoreTally:
+    """Merge tallies of disjoint rows (pairwise, as a balanced tree of additions).
+
+    Examples
+    --------
+    >>> from probwrap.scale import merge_tallies, tally_scores
+    >>> parts = [tally_scores([0.1, 2.0], [0, 1]), tally_scores([0.1], [1])]
+    >>> merge_tallies(parts).counts.tolist()
+    [[1.0, 1.0], [0.0, 1.0]]
+    """
+    items = list(tallies)
+    if not items:
+        raise ValueError("`tallies` is empty; give at least one ScoreTally.")
+    while len(items) > 1:
+        items = [
+            items[i].merge(items[i + 1]) if i + 1 < len(items) else items[i]
+            for i in range(0, len(items), 2)
+        ]
+    return items[0]
+
+
+def _is_dask(obj: Any) -> bool:
+    return hasattr(obj, "__dask_graph__")
+
+
+def tally_scores(
+    scores: Any,
+    y: Any = None,
+    *,
+    sample_weight: Any = None,
+    n_labels: int | None = None,
+    resolution: float = DEFAULT_RESOLUTION,
+    chunk_size: int = 1_000_000,
+) -> ScoreTally:
+    """Tally scores (and labels) into bins of width ``resolution``, chunk by chunk.
+
+    Parameters
+    ----------
+    scores : array-like or dask array of shape (n,)
+        Scores on the log-odds scale (binary log-odds, or one class's one-vs-rest log-odds).
+    y : array-like or dask array of shape (n,), default=None
+        Integer label indices ``0..n_labels-1`` (booleans count as 0/1). Without ``y`` the
+        tally is unlabelled (one column of weights), as for unlabelled deployment data.
+    sample_weight : array-like or dask array of shape (n,), default=None
+        Non-negative row weights (frequencies).
+    n_labels : int, default=None
+        Number of label columns (default 2 with ``y``; multiclass labels need it).
+    resolution : float, default=1e-3
+        Bin width on the score scale.
+    chunk_size : int, default=1_000_000
+        Rows per chunk for in-memory input (the memory of the intermediate arrays). Dask input
+        is tallied block by block on the cluster and only the per-block tallies travel.
+
+    Returns
+    -------
+    ScoreTally
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.scale import tally_scores
+    >>> rng = np.random.default_rng(0)
+    >>> s = rng.normal(size=10_000)
+    >>> y = (rng.random(10_000) < 1 / (1 + np.exp(-s))).astype(int)
+    >>> t = tally_scores(s, y)
+    >>> t.n_rows, int(t.total_weight), t.n_labels
+    (10000, 10000, 2)
+    """
+    r = _check_resolution(resolution)
+    if n_labels is None:
+        n_labels = 2 if y is not None else 1
+    n_labels = _check_n_labels(n_labels)
+    if y is None and n_labels != 1:
+        raise ValueError(f"`n_labels` must be 1 without `y`; got {n_labels}.")
+    if not (isinstance(chunk_size, numbers.Integral) and chunk_size >= 1):
+        raise ValueError(f"`chunk_size` must be a positive integer; got {chunk_size!r}.")
+    if any(_is_dask(v) for v in (scores, y, sample_weight)):
+        from ._dask import tally_dask_scores
+
+        return tally_dask_scores(scores, y, sample_weight, n_labels, r)
+    s = check_scores(scores, name="scores")
+    n = s.shape[0]
+    if n == 0:
+        raise ValueError("`scores` is empty; a tally needs at least one row.")
+    if y is not None:
+        check_same_length(("scores", s), ("y", y))
+        y = np.asarray(y)
+    w = None if sample_weight is None else check_sample_weight(sample_weight, n)
+    parts = [
+        _tally_block(
+            s[i : i + chunk_size],
+            None if y is None else y[i : i + chunk_size],
+            None if w is None else w[i : i + chunk_size],
+            n_labels,
+            r,
+        )
+        for i in range(0, n, chunk_size)
+    ]
+    return merge_tallies(parts)
