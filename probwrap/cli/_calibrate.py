@@ -50,7 +50,7 @@ def read_scores(frame: Any, column: str, path: str | Path, *, scale: str) -> np.
             row = int(np.flatnonzero(bad)[0])
             raise DataError(
                 f"{path}: column '{column}', row {row + 2} (counting the header as row 1): "
-                f"{values[row]!r} is not a probability in [0, 1] (use --scale log-odds for "
+                f"{frame[column].iloc[row]!r} is not a probability in [0, 1] (use --scale log-odds for "
                 "log-odds scores)"
             )
     return values
