@@ -1,0 +1,139 @@
+"""A single-file HTML report of calibration, decisions and prevalence (layer 3: writes files).
+
+:func:`write_report` takes either a fitted classifier (a probwrap wrapper or any scikit-learn
+classifier) with labelled evaluation rows, or plain arrays of labels and probabilities, plus
+optional costs, a capacity and unlabelled rows from the deployment population. It writes one
+HTML file with inline SVG figures, no scripts and no external files.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+from ._content import MetricRow, ReportContent, RuleRow, collect_content
+from ._html import CAUTIONS, figure_to_svg, make_figures, render_html
+
+__all__ = [
+    "CAUTIONS",
+    "MetricRow",
+    "ReportContent",
+    "RuleRow",
+    "build_report",
+    "figure_to_svg",
+    "write_report",
+]
+
+
+def build_report(**kwargs: Any) -> tuple[ReportContent, str]:
+    """Compute the report and return ``(content, html)`` without writing anything.
+
+    Keyword arguments as for :func:`write_report` (without ``path``).
+    """
+    content = collect_content(**kwargs)
+    return content, render_html(content, make_figures(content))
+
+
+def write_report(
+    path: str | Path,
+    *,
+    y_true: Any = None,
+    y_prob: Any = None,
+    model: Any = None,
+    X: Any = None,
+    y: Any = None,
+    sample_weight: Any = None,
+    costs: Any = None,
+    capacity: float | None = None,
+    action_names: Any = None,
+    unlabelled_prob: Any = None,
+    X_unlabelled: Any = None,
+    prior_shift: Any = None,
+    batch_size: int | None = None,
+    n_bins: int = 10,
+    n_resamples: int = 200,
+    confidence_level: float = 0.95,
+    random_state: Any = 0,
+    title: str = "probwrap report",
+) -> ReportContent:
+    """Write a self-contained HTML report and return the numbers it shows.
+
+    Sections: calibration (Brier score, log loss, expected calibration error, calibration slope
+    and intercept, each with a bootstrap interval; reliability diagram), decisions (cost matrix,
+    chosen cutoff with its interval, Bayes plug-in cutoff, mean cost of the chosen rule beside
+    the plug-in rule, the 0.5 cutoff and acting on none or all rows, capacity; cost and decision
+    curves), prevalence (source versus estimated target prevalence with interval and shift test,
+    the cutoff moved to the new prevalence, prevalence by batch) and cautions.
+
+    Parameters
+    ----------
+    path : str or Path
+        The HTML file to write (parent directories are created).
+    y_true, y_prob : array-like of shape (n,)
+        Labels and positive-class probabilities of labelled evaluation rows (held-out rows:
+        calibration measured on training rows is optimistic). Give these, or ``model``.
+    model : fitted binary classifier
+        Used with ``X`` and ``y`` instead of ``y_true``/``y_prob``. A
+        :class:`~probwrap.CostPolicyWrapper` (possibly wrapping others) supplies the costs,
+        capacity, action names and its tuned cutoff with interval; a
+        :class:`~probwrap.CalibrationWrapper` inside supplies the map in use.
+    X, y : labelled rows for ``model``.
+    sample_weight : array-like of shape (n,), optional
+        Weights of the labelled rows.
+    costs : mapping or array-like of shape (2, 2), optional
+        ``{"tp", "fp", "fn", "tn"}`` or a matrix (rows true class, columns actions). Without
+        costs the decisions section shows only the decision curve.
+    capacity : float in (0, 1], optional
+        Largest share of rows that may receive the second action.
+    action_names : pair of str, optional
+        Names of the two actions (default "no action", "act").
+    unlabelled_prob : array-like of shape (m,), optional
+        Positive-class probabilities of unlabelled deployment rows (or use ``X_unlabelled``
+        with ``model``); their prevalence is estimated by EM (Saerens et al. 2002).
+    X_unlabelled : unlabelled rows for ``model`` (and for ``prior_shift.monitor``).
+    prior_shift : fitted and adapted :class:`~probwrap.PriorShiftWrapper`, optional
+        Supplies the source and estimated target prevalence, interval and shift test instead.
+    batch_size : int, optional
+        Also estimate the prevalence per batch of this many unlabelled rows and draw it.
+    n_bins : int, default=10
+        Bins of the reliability diagram and the calibration error.
+    n_resamples : int, default=200
+        Bootstrap resamples for every interval.
+    confidence_level : float, default=0.95
+    random_state : int, RandomState or None, default=0
+        Seed of the bootstraps.
+    title : str, default="probwrap report"
+
+    Returns
+    -------
+    ReportContent
+        The numbers shown, for checking or further use.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> from sklearn.linear_model import LogisticRegression
+    >>> from probwrap.datasets import make_parcels
+    >>> from probwrap.report import write_report
+    >>> train = make_parcels(2000, random_state=0)
+    >>> test = make_parcels(1500, random_state=1)
+    >>> winter = make_parcels(1500, season="winter", random_state=2)
+    >>> model = LogisticRegression(max_iter=1000).fit(train.data, train.target)
+    >>> out = pathlib.Path(tempfile.mkdtemp()) / "report.html"
+    >>> content = write_report(out, model=model, X=test.data, y=test.target,
+    ...                        costs={"fp": 3.0, "fn": 40.0}, capacity=0.3,
+    ...                        X_unlabelled=winter.data, n_resamples=30)
+    >>> out.exists(), bool(content.target_prevalence > content.source_prevalence)
+    (True, True)
+    """
+    content, page = build_report(
+        y_true=y_true, y_prob=y_prob, model=model, X=X, y=y, sample_weight=sample_weight,
+        costs=costs, capacity=capacity, action_names=action_names,
+        unlabelled_prob=unlabelled_prob, X_unlabelled=X_unlabelled, prior_shift=prior_shift,
+        batch_size=batch_size, n_bins=n_bins, n_resamples=n_resamples,
+        confidence_level=confidence_level, random_state=random_state, title=title,
+    )
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(page, encoding="utf-8")
+    return content

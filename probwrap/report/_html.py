@@ -1,0 +1,356 @@
+"""Render a :class:`ReportContent` as one self-contained HTML page with inline SVG figures."""
+
+from __future__ import annotations
+
+import html
+import io
+import re
+from typing import Any
+
+import numpy as np
+
+from .. import __version__
+from ..plot import (
+    CostCurveDisplay,
+    DecisionCurveDisplay,
+    PrevalenceDriftDisplay,
+    ReliabilityDiagram,
+)
+from ._content import ReportContent
+
+__all__ = ["render_html", "figure_to_svg", "CAUTIONS"]
+
+#: the Cautions section, one paragraph per item
+CAUTIONS: tuple[str, ...] = (
+    "Validate on data like the deployment data. Held-out rows from the training period say "
+    "little about a new site, season or customer group; re-check calibration and costs on rows "
+    "that look like the ones the rule will act on.",
+    "Watch for shift. Base rates and the relation between features and outcomes move; monitor "
+    "the estimated prevalence batch by batch and re-check the rule when it moves or when the "
+    "shift test flags a batch.",
+    "Check error rates across groups. A rule with a good average cost can still put most false "
+    "alarms or most misses on one group of people; compare error rates and costs by group "
+    "before use.",
+    "Keep a human route for contested decisions. People affected by an automated decision need "
+    "a way to have it reviewed by a person who can overturn it.",
+    "Defer to local regulation and licensed professional practice. Where decisions concern "
+    "credit, health, employment, insurance or accusations of wrongdoing, the applicable law and "
+    "the judgement of licensed professionals take precedence over this report.",
+)
+
+_CSS = """
+:root { --ink:#1f2a36; --paper:#fbfaf6; --rule:#d8d2c4; --accent:#0f6e74; --warm:#b8432f; }
+* { box-sizing: border-box; }
+body { margin:0; font-family: Georgia, 'DejaVu Serif', serif; color:var(--ink);
+       background:#f3f0e8; line-height:1.45; }
+header.pw-head { background:var(--ink); color:#f3f0e8; padding:1.4rem 2rem 1rem; }
+header.pw-head h1 { margin:0 0 .3rem; font-size:1.6rem; letter-spacing:.02em; }
+header.pw-head p { margin:0; font-size:.85rem; opacity:.85; }
+nav.pw-nav { background:#e8e2d4; padding:.5rem 2rem; font-size:.85rem; }
+nav.pw-nav a { color:var(--ink); margin-right:1.2rem; text-decoration:none;
+               border-bottom:2px solid var(--accent); }
+main { max-width:980px; margin:0 auto; padding:1rem 2rem 3rem; }
+section { background:var(--paper); border-left:5px solid var(--accent); margin:1.2rem 0;
+          padding:.8rem 1.4rem 1.2rem; }
+section#cautions { border-left-color:var(--warm); }
+h2 { font-size:1.2rem; margin:.4rem 0 .6rem; }
+h2 .pw-num { color:var(--accent); margin-right:.4rem; }
+.pw-glance { display:flex; flex-wrap:wrap; gap:.8rem; margin:.6rem 0; padding:0; }
+.pw-glance li { list-style:none; background:#fff; border:1px solid var(--rule);
+                padding:.5rem .8rem; min-width:10rem; }
+.pw-glance b { display:block; font-size:1.15rem; }
+table { border-collapse:collapse; margin:.6rem 0; font-size:.85rem;
+        font-family:'DejaVu Sans Mono', monospace; }
+th, td { border-bottom:1px solid var(--rule); padding:.25rem .6rem; text-align:right; }
+th:first-child, td:first-child { text-align:left; font-family:Georgia, serif; }
+thead th { border-bottom:2px solid var(--ink); }
+tr.pw-chosen td { background:#eaf4f1; font-weight:bold; }
+figure { margin:.8rem 0; }
+figure svg { max-width:100%; height:auto; display:block; background:#fff;
+             border:1px solid var(--rule); }
+figcaption { font-size:.8rem; margin-top:.3rem; }
+.pw-note { font-size:.82rem; color:#4a5561; }
+footer { text-align:center; font-size:.75rem; color:#6b7480; padding:1rem; }
+"""
+
+
+def figure_to_svg(figure: Any, key: str) -> str:
+    """The figure as an inline ``<svg>`` element (text drawn as paths, ids unique per key)."""
+    import matplotlib
+
+    with matplotlib.rc_context({"svg.fonttype": "path", "svg.hashsalt": f"probwrap-{key}"}):
+        buf = io.StringIO()
+        figure.savefig(buf, format="svg", facecolor="white")
+    text = buf.getvalue()
+    svg = text[text.index("<svg"):]
+    # several figures share one page: prefix every id and every reference to one
+    svg = re.sub(r'\bid="([^"]+)"', lambda m: f'id="{key}-{m.group(1)}"', svg)
+    svg = re.sub(r'url\(#([^)]+)\)', lambda m: f"url(#{key}-{m.group(1)})", svg)
+    return re.sub(r'href="#([^"]+)"', lambda m: f'href="#{key}-{m.group(1)}"', svg)
+
+
+def _num(value: float | None, digits: int = 4) -> str:
+    """A table cell holding a number, with the full value in ``data-value``."""
+    if value is None or (isinstance(value, float) and not np.isfinite(value)):
+        return '<td data-value="">&ndash;</td>'
+    return f'<td data-value="{float(value)!r}">{float(value):.{digits}f}</td>'
+
+
+def _share(value: float | None) -> str:
+    if value is None:
+        return '<td data-value="">&ndash;</td>'
+    return f'<td data-value="{float(value)!r}">{100 * float(value):.1f}%</td>'
+
+
+def _text(value: Any) -> str:
+    return html.escape(str(value))
+
+
+def _figure(fig_id: str, svg: str, caption: str) -> str:
+    return (
+        f'<figure class="pw-figure" id="{fig_id}">{svg}'
+        f"<figcaption>{_text(caption)}</figcaption></figure>"
+    )
+
+
+def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
+    level = f"{c.confidence_level:.0%}"
+    rows = "".join(
+        f'<tr data-metric="{m.key}"><td>{_text(m.label)}</td>{_num(m.value)}{_num(m.low)}'
+        f"{_num(m.high)}<td>{_text(m.ideal)}</td></tr>"
+        for m in c.metrics
+    )
+    parts = [
+        '<section id="calibration"><h2><span class="pw-num">1</span>Calibration</h2>',
+        f"<p>Measured on {c.n_rows} labelled rows with an observed prevalence of "
+        f"{c.prevalence:.4f}. Intervals are {level} bootstrap percentile intervals "
+        "(rows resampled with replacement).</p>",
+        '<table id="calibration-metrics"><thead><tr><th>metric</th><th>value</th>'
+        f"<th>{level} low</th><th>{level} high</th><th>ideal</th></tr></thead>"
+        f"<tbody>{rows}</tbody></table>",
+    ]
+    if c.calibration_method is not None:
+        parts.append(
+            f"<p>Calibration map in use: <b>{_text(c.calibration_method)}</b>.</p>"
+        )
+        if c.method_scores:
+            srows = "".join(
+                f"<tr><td>{_text(k)}</td>{_num(v[0])}{_num(v[1])}</tr>"
+                for k, v in c.method_scores.items()
+            )
+            parts.append(
+                '<table id="method-scores"><thead><tr><th>candidate map</th>'
+                "<th>held-out log loss</th><th>standard error vs best</th></tr></thead>"
+                f"<tbody>{srows}</tbody></table>"
+            )
+    parts.append(_figure(
+        "fig-reliability", figures["reliability"],
+        f"Reliability diagram: observed frequency against mean forecast in {c.n_bins} "
+        f"equal-width bins, with {level} Wilson (1927) intervals; rows per bin below.",
+    ))
+    parts.append("</section>")
+    return "".join(parts)
+
+
+def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
+    parts = ['<section id="decisions"><h2><span class="pw-num">2</span>Decisions</h2>']
+    if c.cost_matrix is None:
+        parts.append(
+            "<p>No costs were given, so no decision rule was chosen. The decision curve below "
+            "shows the net benefit of acting at each threshold probability.</p>"
+        )
+    else:
+        m = c.cost_matrix
+        a0, a1 = (_text(a) for a in c.action_names)
+        parts.append(
+            '<table id="cost-matrix"><thead><tr><th>true class</th>'
+            f"<th>{a0}</th><th>{a1}</th></tr></thead><tbody>"
+            f"<tr><td>negative</td>{_num(m[0, 0], 2)}{_num(m[0, 1], 2)}</tr>"
+            f"<tr><td>positive</td>{_num(m[1, 0], 2)}{_num(m[1, 1], 2)}</tr></tbody></table>"
+        )
+        cap = (
+            f"at most {100 * c.capacity:.1f}% of rows may receive &ldquo;{a1}&rdquo;"
+            if c.capacity is not None else "no capacity limit"
+        )
+        parts.append(
+            f'<p id="chosen-rule">Rule: <b>{a1}</b> when the probability exceeds the cutoff '
+            f'<b data-value="{c.chosen_cutoff!r}">{c.chosen_cutoff:.4f}</b>, chosen by '
+            f"{_text(c.cutoff_source)}; {cap}."
+        )
+        if c.chosen_interval is not None:
+            parts.append(
+                f' Its {c.confidence_level:.0%} bootstrap interval is '
+                f'<span id="cutoff-interval" data-low="{c.chosen_interval[0]!r}" '
+                f'data-high="{c.chosen_interval[1]!r}">{c.chosen_interval[0]:.4f} to '
+                f"{c.chosen_interval[1]:.4f}</span>."
+            )
+        if c.plugin is not None:
+            parts.append(
+                f" With calibrated probabilities the Bayes plug-in cutoff "
+                f"(c<sub>fp</sub> &minus; c<sub>tn</sub>) / ((c<sub>fp</sub> &minus; "
+                f"c<sub>tn</sub>) + (c<sub>fn</sub> &minus; c<sub>tp</sub>)) is "
+                f'<span id="plugin-cutoff" data-value="{c.plugin!r}">{c.plugin:.4f}</span>.'
+            )
+        parts.append("</p>")
+        target = c.rules and c.rules[0].target_expected_cost is not None
+        head = (
+            "<tr><th>rule</th><th>cutoff</th><th>mean cost per row</th><th>share acted on</th>"
+            + ("<th>within capacity</th>" if c.capacity is not None else "")
+            + ("<th>share acted on (unlabelled)</th><th>expected cost (unlabelled)</th>"
+               if target else "")
+            + "</tr>"
+        )
+        body = []
+        for r in c.rules:
+            cls = ' class="pw-chosen"' if r.key == "chosen" else ""
+            cells = [f"<td>{_text(r.label)}</td>", _num(r.cutoff), _num(r.mean_cost),
+                     _share(r.flagged_share)]
+            if c.capacity is not None:
+                cells.append(f"<td>{'yes' if r.within_capacity else 'no'}</td>")
+            if target:
+                cells += [_share(r.target_flagged_share), _num(r.target_expected_cost)]
+            body.append(f'<tr data-rule="{r.key}"{cls}>{"".join(cells)}</tr>')
+        parts.append(
+            f'<table id="rule-comparison"><thead>{head}</thead><tbody>{"".join(body)}'
+            "</tbody></table>"
+        )
+        parts.append(
+            '<p class="pw-note">Mean cost per row is the realised cost on the labelled rows of '
+            "this report. A cutoff searched on these same rows is optimistic there; prefer "
+            "held-out or later rows for the comparison."
+            + (" The unlabelled columns use the posteriors re-weighted to the estimated new "
+               "prevalence (expected, not realised, cost)." if target else "")
+            + "</p>"
+        )
+        parts.append(_figure(
+            "fig-cost", figures["cost"],
+            "Mean cost per row at every cutoff, with the chosen cutoff, its bootstrap interval, "
+            "the Bayes plug-in cutoff and the 0.5 cutoff.",
+        ))
+    parts.append(_figure(
+        "fig-decision-curve", figures["decision_curve"],
+        "Decision curve: net benefit TP/n \u2212 FP/n \u00b7 t/(1\u2212t) against threshold "
+        "probability t (Vickers & Elkin 2006), with the act-on-all and act-on-none references.",
+    ))
+    parts.append("</section>")
+    return "".join(parts)
+
+
+def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
+    parts = ['<section id="prevalence"><h2><span class="pw-num">3</span>Prevalence</h2>']
+    if c.target_prevalence is None:
+        parts.append(
+            "<p>No unlabelled rows were given, so the prevalence of the deployment data was not "
+            f"estimated. The labelled rows have prevalence {c.prevalence:.4f}.</p>"
+        )
+    else:
+        iv = c.target_interval
+        parts.append(
+            '<table id="prevalence-summary"><thead><tr><th>quantity</th><th>value</th></tr>'
+            "</thead><tbody>"
+            f'<tr data-item="source"><td>source prevalence (labelled rows)</td>'
+            f"{_num(c.source_prevalence)}</tr>"
+            f'<tr data-item="target"><td>estimated target prevalence ({_text(c.prior_method)})'
+            f"</td>{_num(c.target_prevalence)}</tr>"
+            + (
+                f'<tr data-item="target_low"><td>{c.confidence_level:.0%} interval, low</td>'
+                f'{_num(iv[0])}</tr><tr data-item="target_high"><td>'
+                f"{c.confidence_level:.0%} interval, high</td>{_num(iv[1])}</tr>"
+                if iv is not None else ""
+            )
+            + f'<tr data-item="shift_statistic"><td>shift test statistic (likelihood ratio, '
+            f"chi-square 1 df)</td>{_num(c.shift_statistic)}</tr>"
+            f'<tr data-item="shift_pvalue"><td>shift test p-value</td>'
+            f'<td data-value="{c.shift_pvalue!r}">{c.shift_pvalue:.3g}</td></tr>'
+            + (
+                f'<tr data-item="adapted_cutoff"><td>cutoff moved to the estimated prevalence'
+                f"</td>{_num(c.adapted_cutoff)}</tr>" if c.adapted_cutoff is not None else ""
+            )
+            + "</tbody></table>"
+        )
+        verdict = (
+            "The test rejects &ldquo;no shift&rdquo; at the 1% level: the base rate has moved."
+            if c.shift_pvalue < 0.01 else
+            "The test does not reject &ldquo;no shift&rdquo; at the 1% level."
+        )
+        parts.append(
+            f"<p>Estimated from {c.n_unlabelled or 'the'} unlabelled rows, assuming only the "
+            f"class shares changed (prior shift). {verdict}</p>"
+        )
+        if "prevalence" in figures:
+            parts.append(_figure(
+                "fig-prevalence", figures["prevalence"],
+                "Estimated prevalence per batch of unlabelled rows with bootstrap intervals, "
+                "against the source prevalence; circled batches fail the shift test.",
+            ))
+    parts.append("</section>")
+    return "".join(parts)
+
+
+def _cautions_section() -> str:
+    items = "".join(f"<li>{_text(t)}</li>" for t in CAUTIONS)
+    return (
+        '<section id="cautions"><h2><span class="pw-num">4</span>Cautions</h2>'
+        "<p>Decisions made with these numbers can affect people.</p>"
+        f"<ul>{items}</ul></section>"
+    )
+
+
+def _glance(c: ReportContent) -> str:
+    items = [("labelled rows", f"{c.n_rows}"), ("observed prevalence", f"{c.prevalence:.4f}")]
+    if c.chosen_cutoff is not None:
+        items.append(("chosen cutoff", f"{c.chosen_cutoff:.4f}"))
+    if c.target_prevalence is not None:
+        items.append(("estimated new prevalence", f"{c.target_prevalence:.4f}"))
+    li = "".join(f"<li>{_text(k)}<b>{_text(v)}</b></li>" for k, v in items)
+    return f'<ul class="pw-glance" id="glance">{li}</ul>'
+
+
+def make_figures(c: ReportContent) -> dict[str, str]:
+    """Draw every figure of the report and return them as inline SVG strings."""
+    figs: dict[str, str] = {}
+    rel = ReliabilityDiagram.from_predictions(
+        c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
+        confidence_level=c.confidence_level, pos_label=1.0,
+    )
+    figs["reliability"] = figure_to_svg(rel.figure_, "rel")
+    if c.cost_matrix is not None:
+        disp = CostCurveDisplay(
+            result=c.cost_curve, plugin_cutoff=c.plugin, interval=c.cost_interval
+        ).plot()
+        if c.chosen_cutoff != disp.cutoff:
+            disp.chosen_line_.set_xdata([c.chosen_cutoff, c.chosen_cutoff])
+        figs["cost"] = figure_to_svg(disp.figure_, "cost")
+    dc = DecisionCurveDisplay.from_predictions(
+        c.y_true, c.y_prob, sample_weight=c.sample_weight, pos_label=1.0,
+        marked_threshold=c.chosen_cutoff,
+    )
+    figs["decision_curve"] = figure_to_svg(dc.figure_, "dc")
+    if c.batch_table is not None:
+        pd_ = PrevalenceDriftDisplay.from_table(
+            c.batch_table, source_prevalence=c.source_prevalence
+        )
+        figs["prevalence"] = figure_to_svg(pd_.figure_, "prev")
+    return figs
+
+
+def render_html(c: ReportContent, figures: dict[str, str]) -> str:
+    """The complete page."""
+    return (
+        '<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">'
+        '<meta name="viewport" content="width=device-width, initial-scale=1">'
+        f"<title>{_text(c.title)}</title><style>{_CSS}</style></head><body>"
+        f'<header class="pw-head"><h1>{_text(c.title)}</h1>'
+        f"<p>Calibration, decision rule and prevalence &middot; probwrap {__version__}</p>"
+        "</header>"
+        '<nav class="pw-nav"><a href="#calibration">Calibration</a>'
+        '<a href="#decisions">Decisions</a><a href="#prevalence">Prevalence</a>'
+        '<a href="#cautions">Cautions</a></nav><main>'
+        + _glance(c)
+        + _calibration_section(c, figures)
+        + _decision_section(c, figures)
+        + _prevalence_section(c, figures)
+        + _cautions_section()
+        + "</main><footer>Written by probwrap. Self-contained: no scripts, no external "
+        "files.</footer></body></html>"
+    )
