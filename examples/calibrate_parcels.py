@@ -1,4 +1,8 @@
-"""Calibrating a parcel-damage model (invented demo scenario).
+"""
+Calibrating a parcel-damage model
+=================================
+
+(Invented demo scenario.)
 
 A sorting hub scores every outgoing parcel for the risk that it arrives damaged. A gradient
 boosting model ranks parcels well, but are its probabilities right? The generator knows the true

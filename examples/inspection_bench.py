@@ -1,4 +1,8 @@
-"""Inspection bench with limited capacity (invented parcel scenario; demo data only).
+"""
+Inspection bench with limited capacity
+======================================
+
+(Invented parcel scenario; demo data only.)
 
 A parcel-sorting hub scores each outgoing parcel for the risk that it arrives damaged. Pulling a
 parcel to the inspection bench and repacking it costs 3 currency units; a damaged delivery costs

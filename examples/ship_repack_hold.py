@@ -1,4 +1,8 @@
-"""Ship / repack / hold with per-parcel values (invented parcel scenario; demo data only).
+"""
+Ship, repack or hold, with per-parcel values
+============================================
+
+(Invented parcel scenario; demo data only.)
 
 Each parcel ends up intact, dented (repacking would have prevented it) or broken. Three actions:
 

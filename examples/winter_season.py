@@ -1,4 +1,8 @@
-"""The winter storm season, detected from unlabelled parcels (invented demo scenario).
+"""
+The winter storm season, detected from unlabelled parcels
+=========================================================
+
+(Invented demo scenario.)
 
 A sorting hub scores every outgoing parcel for the risk that it arrives damaged and pulls the
 risky ones for inspection: an inspection costs 4 currency units, a damaged delivery 40 (refund
