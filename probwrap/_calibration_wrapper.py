@@ -13,7 +13,7 @@ from sklearn.model_selection import StratifiedKFold
 from sklearn.utils.metaestimators import available_if
 from sklearn.utils.validation import check_is_fitted
 
-from ._heldout import HeldOutClassifierBase, HeldOutPredictions
+from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask
 from .calibration._base import CalibrationMap
 from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
@@ -363,11 +363,18 @@ class CalibrationWrapper(HeldOutClassifierBase):
         return self._apply_map(self.calibrator_, self._to_scores(values))
 
     def predict_proba(self, X: Any) -> np.ndarray:
-        """Calibrated class probabilities, shape (n, n_classes), rows summing to one."""
+        """Calibrated class probabilities, shape (n, n_classes), rows summing to one.
+
+        For Dask input the result is a Dask array, computed block by block.
+        """
+        if _is_dask(X):
+            return self._dask_predict(self._calibrated, X, len(self.classes_))
         return self._calibrated(X)
 
     def predict(self, X: Any) -> np.ndarray:
-        """Class with the largest calibrated probability."""
+        """Class with the largest calibrated probability (a Dask array for Dask input)."""
+        if _is_dask(X):
+            return self._dask_predict(self.predict, X, None, self.classes_.dtype)
         proba = self._calibrated(X)
         return self.classes_[np.argmax(proba, axis=1)]
 

@@ -11,7 +11,7 @@ from sklearn.base import clone
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import check_is_fitted, column_or_1d
 
-from ._heldout import HeldOutClassifierBase, HeldOutPredictions, is_frozen
+from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, is_frozen
 from ._validation import check_labels, check_sample_weight
 from .decision import (
     apply_class_offsets,
@@ -249,8 +249,16 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         self
         """
         self._check_params()
+        dask_input = _is_dask(X) or _is_dask(y) or _is_dask(sample_weight)
+        if dask_input and callable(self.costs):
+            raise ValueError(
+                "`costs` as a function of X is not supported for Dask input; give a cost matrix."
+            )
         needs_heldout = (
-            self.strategy == "tuned" or self.capacity is not None or is_frozen(self.estimator)
+            self.strategy == "tuned"
+            or self.capacity is not None
+            or is_frozen(self.estimator)
+            or dask_input
         )
         ho: HeldOutPredictions | None = None
         if needs_heldout:
@@ -295,6 +303,9 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             self._fit_cutoff(ho, proba, matrix, budget_share)
         else:
             self._fit_offsets(ho, proba, matrix, row_costs, k, budget_index, budget_share)
+        if ho is not None and ho.from_tally:
+            # Tally rows (Dask input): their weights are row counts, not rows to resample.
+            self._interval_inputs = None
         if ho is not None:
             chosen = self._decide(proba, matrix if row_costs is None else row_costs)
             realised = (
@@ -422,12 +433,20 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         return self._row_costs(X, self.classes_.shape[0])
 
     def predict_proba(self, X: Any) -> np.ndarray:
-        """The wrapped estimator's class probabilities, unchanged, shape (n, n_classes)."""
+        """The wrapped estimator's class probabilities, unchanged, shape (n, n_classes).
+
+        For Dask input the result is a Dask array, computed block by block.
+        """
         check_is_fitted(self, "actions_")
+        if _is_dask(X):
+            return self._dask_predict(self.predict_proba, X, self.classes_.shape[0])
         return self._inner_output(X, "predict_proba")
 
     def predict(self, X: Any) -> np.ndarray:
-        """Action for each row (labels from ``actions_``)."""
+        """Action for each row (labels from ``actions_``; a Dask array for Dask input)."""
+        if _is_dask(X):
+            check_is_fitted(self, "actions_")
+            return self._dask_predict(self.predict, X, None, self.actions_.dtype)
         proba = self.predict_proba(X)
         costs = None if (self._plain or self._cutoff_mode) else self._costs_for(X)
         return self.actions_[self._decide(proba, costs)]

@@ -73,6 +73,14 @@ class HeldOutPredictions:
     fold: np.ndarray
     n_folds: int
     estimator: Any
+    #: True when the rows are the (bin, class) rows of a score tally (Dask input), whose weights
+    #: are tallied row counts: resampling them would not resample the original rows.
+    from_tally: bool = False
+
+
+def _is_dask(obj: Any) -> bool:
+    """Whether ``obj`` is a Dask collection (checked without importing Dask)."""
+    return hasattr(obj, "__dask_graph__")
 
 
 def is_frozen(estimator: Any) -> bool:
@@ -176,6 +184,13 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         """
         if self.estimator is None:
             raise ValueError("`estimator` must be a classifier; got None.")
+        if _is_dask(X) or _is_dask(y) or _is_dask(sample_weight):
+            # Dask input (frozen estimators only): predictions are tallied block by block on the
+            # cluster; the held-out rows are the tally's weighted (bin, class) rows.
+            from .scale._dask import heldout_from_dask
+
+            response = _resolve_response(self.estimator, response or self._heldout_response)
+            return heldout_from_dask(self, X, y, sample_weight, response)
         if y is None:
             raise ValueError(
                 f"{type(self).__name__} requires y to be passed, but the target y is None."
@@ -292,6 +307,13 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         return values
 
     # -- prediction helpers ----------------------------------------------------------------
+    def _dask_predict(self, method: Any, X: Any, n_columns: int | None, dtype: Any = float):
+        """Apply ``method`` to every block of Dask ``X``; returns a Dask array."""
+        from .scale._dask import dask_predict
+
+        check_is_fitted(self, "estimator_")
+        return dask_predict(method, X, n_columns, dtype)
+
     def _inner_output(self, X: Any, response: str) -> np.ndarray:
         check_is_fitted(self, "estimator_")
         out = np.asarray(getattr(self.estimator_, response)(X), dtype=float)

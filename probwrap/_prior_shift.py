@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 from sklearn.utils.validation import check_is_fitted
 
-from ._heldout import HeldOutClassifierBase
+from ._heldout import HeldOutClassifierBase, _is_dask
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
 from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
 
@@ -209,6 +209,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             random_state=self.random_state,
         )
         est.fit(ho.values, ho.y_index, ho.sample_weight)
+        if ho.from_tally:
+            # Tally rows (Dask input): bootstrapping them would not resample the original rows,
+            # so adapt gives point estimates only (target_prior_interval_ is None).
+            est.n_resamples = 0
         self.prior_estimator_ = est
         self.source_prior_ = est.source_prior_
         self.confusion_matrix_ = est.confusion_
@@ -248,9 +252,22 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         """
         check_is_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to adapt")
-        proba = self._inner_output(X, "predict_proba")
         est = self.prior_estimator_
         rs = self.random_state
+        if _is_dask(X) or _is_dask(sample_weight):
+            # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is
+            # estimated from the tally's weighted rows (a point estimate, no bootstrap).
+            import copy
+
+            from .scale._dask import unlabelled_proba_from_dask
+
+            proba, sample_weight, _ = unlabelled_proba_from_dask(
+                self.estimator_, X, sample_weight
+            )
+            est = copy.copy(est)
+            est.n_resamples = 0
+        else:
+            proba = self._inner_output(X, "predict_proba")
         res = est.estimate(proba, sample_weight, random_state=rs)
         self.target_prior_ = res.prior
         self.target_prior_interval_ = res.interval
@@ -302,6 +319,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         probabilities, unchanged.
         """
         check_is_fitted(self, "prior_estimator_")
+        if _is_dask(X):
+            return self._dask_predict(self.predict_proba, X, self.classes_.shape[0])
         proba = self._inner_output(X, "predict_proba")
         prior = self._prior_in_use()
         if prior is None:
@@ -310,6 +329,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         return adjust_to_prior(calibrated, self.source_prior_, prior)
 
     def predict(self, X: Any) -> np.ndarray:
-        """Class with the largest adjusted probability."""
+        """Class with the largest adjusted probability (a Dask array for Dask input)."""
         check_is_fitted(self, "prior_estimator_")
+        if _is_dask(X):
+            return self._dask_predict(self.predict, X, None, self.classes_.dtype)
         return self.classes_[np.argmax(self.predict_proba(X), axis=1)]

@@ -1,0 +1,272 @@
+"""Dask input: tallies built block by block on a cluster, and the wrappers' Dask path.
+
+Everything here imports Dask lazily; probwrap itself never needs it. Blocks of rows are turned
+into small :class:`~probwrap.scale.ScoreTally` objects where the data live (on the workers), and
+only those tallies are merged, as a tree, and brought back to the client.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from ._tally import DEFAULT_RESOLUTION, ScoreTally, _tally_block
+
+__all__ = ["is_dask_collection", "tally_dask_scores", "heldout_from_dask", "dask_predict"]
+
+
+def is_dask_collection(obj: Any) -> bool:
+    """Whether ``obj`` is a Dask collection (array, DataFrame, Series), without importing Dask."""
+    return hasattr(obj, "__dask_graph__")
+
+
+def _is_dask_array(obj: Any) -> bool:
+    return is_dask_collection(obj) and hasattr(obj, "chunks") and hasattr(obj, "ndim")
+
+
+def _import_dask():
+    try:
+        import dask
+        import dask.array as da
+    except ImportError as exc:  # pragma: no cover - dask is installed in the test extra
+        raise ImportError(
+            "Dask input needs the optional dependency dask: pip install 'probwrap[dask]'."
+        ) from exc
+    return dask, da
+
+
+def _row_blocks(X: Any) -> tuple[list, list | None]:
+    """Delayed row blocks of a Dask array / DataFrame / Series, and their lengths if known."""
+    if _is_dask_array(X):
+        if X.ndim == 2 and len(X.chunks[1]) > 1:
+            X = X.rechunk({1: X.shape[1]})
+        if X.ndim not in (1, 2):
+            raise ValueError(f"`X` must be a 1-d or 2-d Dask array; got {X.ndim} dimensions.")
+        blocks = list(X.to_delayed().ravel())
+        lengths = list(X.chunks[0])
+        if any(np.isnan(c) for c in lengths):
+            lengths = None
+        return blocks, lengths
+    if hasattr(X, "npartitions") and hasattr(X, "to_delayed"):
+        return list(X.to_delayed()), None
+    raise ValueError(f"`X` is a Dask collection of unsupported type {type(X).__name__}.")
+
+
+def _aligned_blocks(v: Any, name: str, X: Any, blocks: list, lengths: list | None) -> list:
+    """Blocks of ``v`` (labels or weights) aligned with the row blocks of ``X``."""
+    if v is None:
+        return [None] * len(blocks)
+    dask, da = _import_dask()
+    if is_dask_collection(v):
+        if not _is_dask_array(v):
+            parts = list(v.to_delayed())
+            if len(parts) != len(blocks):
+                raise ValueError(
+                    f"`{name}` has {len(parts)} partitions but `X` has {len(blocks)} blocks; "
+                    "they must be partitioned alike (e.g. columns of one Dask DataFrame)."
+                )
+            return parts
+        if lengths is None:
+            parts = list(v.to_delayed().ravel())
+            if len(parts) != len(blocks):
+                raise ValueError(
+                    f"`{name}` has {len(parts)} blocks but `X` has {len(blocks)}; they must be "
+                    "chunked alike."
+                )
+            return parts
+        if v.shape[0] != sum(lengths):
+            raise ValueError(f"`{name}` has {v.shape[0]} entries but `X` has {sum(lengths)} rows.")
+        return list(v.rechunk((tuple(lengths),)).to_delayed().ravel())
+    arr = np.asarray(v)
+    if lengths is None:
+        lengths = list(dask.compute(*[dask.delayed(len)(b) for b in blocks]))
+    if arr.shape[0] != sum(lengths):
+        raise ValueError(f"`{name}` has {arr.shape[0]} entries but `X` has {sum(lengths)} rows.")
+    cuts = np.cumsum([0, *lengths])
+    return [arr[cuts[i] : cuts[i + 1]] for i in range(len(blocks))]
+
+
+def _tree_merge(dask: Any, parts: list) -> Any:
+    merge = dask.delayed(lambda a, b: a.merge(b), pure=True)
+    while len(parts) > 1:
+        parts = [
+            merge(parts[i], parts[i + 1]) if i + 1 < len(parts) else parts[i]
+            for i in range(0, len(parts), 2)
+        ]
+    return parts[0]
+
+
+def tally_dask_scores(
+    scores: Any, y: Any, sample_weight: Any, n_labels: int, resolution: float
+) -> ScoreTally:
+    """Tally of Dask (or mixed Dask / NumPy) scores, labels and weights, block by block."""
+    dask, da = _import_dask()
+    if not is_dask_collection(scores):
+        scores = da.from_array(np.asarray(scores, dtype=float), chunks=1_000_000)
+    if getattr(scores, "ndim", 1) != 1:
+        raise ValueError(f"`scores` must be 1-d of shape (n,); got shape {scores.shape}.")
+    blocks, lengths = _row_blocks(scores)
+    ys = _aligned_blocks(y, "y", scores, blocks, lengths)
+    ws = _aligned_blocks(sample_weight, "sample_weight", scores, blocks, lengths)
+    block = dask.delayed(_tally_block, pure=True)
+    parts = [block(b, yb, wb, n_labels, resolution) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
+    tally = _tree_merge(dask, parts).compute()
+    if tally.n_rows == 0:
+        raise ValueError("`scores` is empty; a tally needs at least one row.")
+    if tally.total_weight <= 0:
+        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+    return tally
+
+
+# -- the wrappers' Dask path ------------------------------------------------------------------------
+def _binary_scores(values: np.ndarray, response: str) -> np.ndarray:
+    """Binary log-odds from one block of inner-estimator output, at full resolution."""
+    values = np.asarray(values, dtype=float)
+    if not np.all(np.isfinite(values)):
+        raise ValueError(
+            f"`estimator` returned NaN or infinite values from {response}; held-out predictions "
+            "must be finite."
+        )
+    if response == "decision_function":
+        return values.ravel() if values.ndim == 1 else values[:, -1] - values[:, 0]
+    lp = np.log(np.maximum(values, np.nextafter(0.0, 1.0)))
+    return lp[:, 1] - lp[:, 0]
+
+
+def _block_tally(estimator, response, classes, resolution, Xb, yb, wb) -> ScoreTally:
+    s = _binary_scores(getattr(estimator, response)(Xb), response)
+    y_index = None
+    if yb is not None:
+        yb = np.asarray(yb).ravel()
+        pos = np.searchsorted(classes, yb)
+        pos = np.clip(pos, 0, classes.shape[0] - 1)
+        bad = classes[pos] != yb
+        if np.any(bad):
+            raise ValueError(
+                f"`y` has labels {np.unique(yb[bad])[:5].tolist()} that the frozen estimator "
+                f"does not know; its classes are {classes.tolist()}."
+            )
+        y_index = pos
+    return _tally_block(s, y_index, wb, 2 if yb is not None else 1, resolution)
+
+
+def dask_tally_of_model(
+    estimator: Any,
+    response: str,
+    X: Any,
+    y: Any = None,
+    sample_weight: Any = None,
+    *,
+    resolution: float = DEFAULT_RESOLUTION,
+) -> ScoreTally:
+    """Tally of a fitted binary model's log-odds on Dask rows, computed on the cluster."""
+    dask, _ = _import_dask()
+    classes = np.asarray(estimator.classes_)
+    order = np.argsort(classes)
+    if not np.array_equal(order, np.arange(classes.shape[0])):
+        raise ValueError("The frozen estimator's classes_ must be sorted (as scikit-learn sorts).")
+    blocks, lengths = _row_blocks(X)
+    ys = _aligned_blocks(y, "y", X, blocks, lengths)
+    ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
+    block = dask.delayed(_block_tally, pure=True)
+    parts = [
+        block(estimator, response, classes, resolution, b, yb, wb)
+        for b, yb, wb in zip(blocks, ys, ws, strict=True)
+    ]
+    return _tree_merge(dask, parts).compute()
+
+
+def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: str):
+    """Held-out predictions of a frozen binary estimator on Dask rows, as tally rows.
+
+    The returned :class:`~probwrap._heldout.HeldOutPredictions` has one row per (bin, class)
+    of the tally, weighted by the tallied weight; ``from_tally`` is set.
+    """
+    from sklearn.frozen import FrozenEstimator
+
+    from .._heldout import HeldOutPredictions
+
+    estimator = owner.estimator
+    if not isinstance(estimator, FrozenEstimator):
+        raise ValueError(
+            "Dask input needs an already fitted estimator wrapped in "
+            "sklearn.frozen.FrozenEstimator: the wrappers do not fit models on Dask data, they "
+            f"only tally a frozen model's predictions; got {type(estimator).__name__}."
+        )
+    if y is None:
+        raise ValueError(f"{type(owner).__name__} requires y to be passed, but the target y is None.")
+    classes = np.asarray(estimator.classes_)
+    if classes.shape[0] != 2:
+        raise ValueError(
+            f"Dask input is supported for binary classifiers; the frozen estimator has "
+            f"{classes.shape[0]} classes. Tally each class's one-vs-rest scores with "
+            "probwrap.scale.tally_scores instead."
+        )
+    tally = dask_tally_of_model(estimator, response, X, y, sample_weight)
+    if tally.total_weight <= 0:
+        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+    weighted = np.flatnonzero(tally.label_weight > 0)
+    if weighted.shape[0] < 2:
+        raise ValueError(
+            "`y` contains only 1 class (with positive weight); the held-out rows must contain "
+            "at least two classes."
+        )
+    scores, y_index, w = tally.to_rows()
+    values = scores if response == "decision_function" else np.column_stack(
+        [_expit(-scores), _expit(scores)]
+    )
+    owner.estimator_ = estimator
+    owner.classes_ = classes
+    if hasattr(estimator, "n_features_in_"):
+        owner.n_features_in_ = estimator.n_features_in_
+    if hasattr(estimator, "feature_names_in_"):
+        owner.feature_names_in_ = estimator.feature_names_in_
+    owner.tally_ = tally
+    return HeldOutPredictions(
+        values=values,
+        response=response,
+        classes=classes,
+        y_index=y_index,
+        sample_weight=w,
+        fold=np.full(y_index.shape[0], -1, dtype=int),
+        n_folds=0,
+        estimator=estimator,
+        from_tally=True,
+    )
+
+
+def unlabelled_proba_from_dask(estimator: Any, X: Any, sample_weight: Any = None):
+    """Binary posteriors of unlabelled Dask rows as tally rows: ``(proba (m, 2), weights, tally)``."""
+    classes = np.asarray(estimator.classes_)
+    if classes.shape[0] != 2:
+        raise ValueError(
+            f"Dask input is supported for binary classifiers; the estimator has "
+            f"{classes.shape[0]} classes."
+        )
+    tally = dask_tally_of_model(estimator, "predict_proba", X, None, sample_weight)
+    if tally.total_weight <= 0:
+        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+    proba, w = tally.to_scores(proba=True)
+    return proba, w, tally
+
+
+def _expit(x: np.ndarray) -> np.ndarray:
+    from scipy.special import expit
+
+    return expit(x)
+
+
+def dask_predict(method: Any, X: Any, n_columns: int | None, dtype: Any = float) -> Any:
+    """Apply an in-memory prediction ``method`` block by block; returns a Dask array.
+
+    ``n_columns`` is the width of 2-d output (None for 1-d output such as ``predict``).
+    """
+    dask, da = _import_dask()
+    blocks, lengths = _row_blocks(X)
+    out = []
+    for i, b in enumerate(blocks):
+        n_i = np.nan if lengths is None else lengths[i]
+        shape = (n_i,) if n_columns is None else (n_i, n_columns)
+        out.append(da.from_delayed(dask.delayed(method)(b), shape=shape, dtype=dtype))
+    return da.concatenate(out, axis=0)
