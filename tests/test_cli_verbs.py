@@ -304,3 +304,16 @@ def test_module_entry_point_in_a_subprocess(files):
     assert bad.returncode == 1
     assert bad.stderr.strip().endswith("nope.csv: file not found")
     assert "Traceback" not in bad.stderr
+
+
+def test_library_warnings_reach_stderr_as_single_lines(tmp_path, capsys):
+    # scores that separate the labels perfectly: beta calibration warns that the fit is a step
+    pd.DataFrame({"risk": [0.1, 0.2, 0.3, 0.6, 0.7, 0.8], "damaged": [0, 0, 0, 1, 1, 1]}).to_csv(
+        tmp_path / "sep.csv", index=False)
+    code, out, err = run(capsys, "calibrate", "fit", "--scores", tmp_path / "sep.csv",
+                         "--score-column", "risk", "--label-column", "damaged",
+                         "--method", "beta", "--out", tmp_path / "b.json")
+    assert code == 0
+    assert "separate the two classes perfectly" in err
+    assert all(line.startswith("probwrap calibrate: warning: ") for line in err.splitlines())
+    assert "fitted a beta map on 6 rows" in out

@@ -12,6 +12,8 @@ from __future__ import annotations
 
 import argparse
 import json
+import sys
+import warnings
 from pathlib import Path
 from typing import Any
 
@@ -22,6 +24,7 @@ from ._common import DataError, numeric_column, progress, read_table
 
 __all__ = [
     "register", "read_labels", "read_scores", "write_table", "add_scale_flag", "whole_number",
+    "report_warnings",
 ]
 
 SCALES = ("proba", "log-odds")
@@ -136,6 +139,16 @@ def whole_number(minimum: int):
     return parse
 
 
+def report_warnings(verb: str, caught: list) -> None:
+    """Print each distinct library warning once, on one line of stderr (no source lines)."""
+    seen: set[str] = set()
+    for w in caught:
+        message = " ".join(str(w.message).split())
+        if message not in seen:
+            seen.add(message)
+            print(f"probwrap {verb}: warning: {message}", file=sys.stderr)
+
+
 # -- the score column as an already-fitted model -------------------------------------------------
 class _ScoreColumn(ClassifierMixin, BaseEstimator):
     """A fitted "model" whose decision function is the first column of ``X`` (log-odds)."""
@@ -183,12 +196,15 @@ def _fit(args: argparse.Namespace) -> int:
             "label; --method auto needs at least two of each to compare maps by cross-validation"
         )
     try:
-        wrapper = fit_map(
-            to_log_odds(scores, args.scale), y, method=args.method, folds=args.folds,
-            seed=args.seed,
-        )
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            wrapper = fit_map(
+                to_log_odds(scores, args.scale), y, method=args.method, folds=args.folds,
+                seed=args.seed,
+            )
     except ValueError as exc:
         raise DataError(f"{args.scores}: the map cannot be fitted ({exc})") from None
+    report_warnings("calibrate", caught)
     metadata: dict[str, Any] = {
         "score_scale": args.scale,
         "labels": labels,

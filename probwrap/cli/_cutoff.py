@@ -10,11 +10,12 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import warnings
 from typing import Any
 
 import numpy as np
 
-from ._calibrate import add_scale_flag, read_labels, read_scores, whole_number
+from ._calibrate import add_scale_flag, read_labels, read_scores, report_warnings, whole_number
 from ._common import read_table
 
 __all__ = ["register", "cutoff_summary"]
@@ -166,10 +167,13 @@ def _run(args: argparse.Namespace) -> int:
     scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
     y, _ = read_labels(frame, args.label_column, args.scores, positive=args.positive_label)
     costs = {"tp": args.cost_tp, "fp": args.cost_fp, "fn": args.cost_fn, "tn": args.cost_tn}
-    out = cutoff_summary(
-        scores, y, costs, scale=args.scale, capacity=args.capacity, n_resamples=args.resamples,
-        confidence_level=args.confidence, seed=args.seed,
-    )
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        out = cutoff_summary(
+            scores, y, costs, scale=args.scale, capacity=args.capacity,
+            n_resamples=args.resamples, confidence_level=args.confidence, seed=args.seed,
+        )
+    report_warnings("cutoff", caught)
     if args.format == "json":
         print(json.dumps(out, indent=2, allow_nan=False))
     else:

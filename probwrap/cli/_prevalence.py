@@ -18,13 +18,12 @@ from __future__ import annotations
 
 import argparse
 import json
-import sys
 import warnings
 from typing import Any
 
 import numpy as np
 
-from ._calibrate import add_scale_flag, read_labels, read_scores, whole_number
+from ._calibrate import add_scale_flag, read_labels, read_scores, report_warnings, whole_number
 from ._common import read_table
 from ._cutoff import _level
 
@@ -202,12 +201,7 @@ def _run(args: argparse.Namespace) -> int:
                 proba, ref_scores, ref_y, method=args.method,
                 recalibrate=not args.no_recalibration, **settings,
             )
-    seen = set()
-    for w in caught:
-        message = " ".join(str(w.message).split())
-        if message not in seen:
-            seen.add(message)
-            print(f"probwrap prevalence: warning: {message}", file=sys.stderr)
+    report_warnings("prevalence", caught)
     if args.format == "json":
         print(json.dumps(out, indent=2, allow_nan=False))
     else:
