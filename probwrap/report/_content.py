@@ -151,10 +151,15 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, rng) -> list[MetricRow]:
     for key, label, fn, kw, ideal in specs:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            res = bootstrap_interval(
-                fn, y, p, sample_weight=w, n_resamples=n_resamples, confidence_level=level,
-                random_state=seed, **kw,
-            )
+            try:
+                res = bootstrap_interval(
+                    fn, y, p, sample_weight=w, n_resamples=n_resamples, confidence_level=level,
+                    random_state=seed, **kw,
+                )
+            except ValueError:  # e.g. a slope for perfectly separated classes: not defined
+                rows.append(MetricRow(key, label, float("nan"), float("nan"), float("nan"),
+                                      ideal))
+                continue
         rows.append(MetricRow(key, label, float(res.statistic),
                               float(res.confidence_interval.low),
                               float(res.confidence_interval.high), ideal))
@@ -225,6 +230,9 @@ def collect_content(
     if np.unique(y01).shape[0] < 2:
         raise ValueError("The labels must contain both classes to assess calibration.")
     w = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    cap = check_capacity(capacity)
+    if costs is not None:
+        check_cost_matrix(costs, n_classes=2, n_actions=2)
 
     content = ReportContent(
         title=title,
@@ -246,7 +254,7 @@ def collect_content(
         costs = getattr(policy, "cost_matrix_", None)
     if capacity is None and policy is not None and not isinstance(policy.capacity, dict):
         capacity = policy.capacity
-    cap = check_capacity(capacity)
+        cap = check_capacity(capacity)
     content.capacity = cap
     if action_names is None and policy is not None:
         action_names = [str(a) for a in policy.actions_]

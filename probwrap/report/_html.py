@@ -128,6 +128,8 @@ def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
         '<table id="calibration-metrics"><thead><tr><th>metric</th><th>value</th>'
         f"<th>{level} low</th><th>{level} high</th><th>ideal</th></tr></thead>"
         f"<tbody>{rows}</tbody></table>",
+        '<p class="pw-note">The binned calibration error is biased upwards in small samples and '
+        "in resamples, so its bootstrap interval can lie above the value itself.</p>",
     ]
     if c.calibration_method is not None:
         parts.append(

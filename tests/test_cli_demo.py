@@ -1,0 +1,164 @@
+"""`probwrap demo` and `probwrap report` end to end, good and malformed score files."""
+
+import html.parser
+import subprocess
+import sys
+
+import pandas as pd
+import pytest
+
+from probwrap.cli import main
+from probwrap.datasets import make_parcels
+from probwrap.decision import search_cutoff
+
+
+class _Figures(html.parser.HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.figures, self.sections, self._in = [], [], None
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        if tag == "section":
+            self.sections.append(a.get("id"))
+        if tag == "figure":
+            self._in = a.get("id")
+        if tag == "svg" and self._in:
+            self.figures.append(self._in)
+
+    def handle_endtag(self, tag):
+        if tag == "figure":
+            self._in = None
+
+
+def _parse(path):
+    p = _Figures()
+    p.feed(path.read_text(encoding="utf-8"))
+    return p
+
+
+def test_demo_subprocess_writes_report(tmp_path):
+    out = tmp_path / "demo"
+    proc = subprocess.run(
+        [sys.executable, "-m", "probwrap.cli", "demo", "--out", str(out), "--n-train", "2000"],
+        capture_output=True, text=True, timeout=120,
+    )
+    assert proc.returncode == 0, proc.stderr
+    assert "chosen cutoff" in proc.stdout and "winter prevalence (est.)" in proc.stdout
+    page = _parse(out / "report.html")
+    assert page.sections == ["calibration", "decisions", "prevalence", "cautions"]
+    assert page.figures == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence"]
+
+
+def test_demo_in_process_summary(tmp_path, capsys):
+    assert main(["demo", "--out", str(tmp_path), "--n-train", "2000", "--seed", "1"]) == 0
+    text = capsys.readouterr().out
+    line = next(t for t in text.splitlines() if "winter prevalence (est.)" in t)
+    summer = float(next(t for t in text.splitlines() if "summer prevalence" in t).split()[-1])
+    assert float(line.split()[3]) > summer  # winter damage roughly doubles
+    assert (tmp_path / "report.html").stat().st_size > 20_000
+
+
+def test_demo_usage_error_exit_2(capsys):
+    with pytest.raises(SystemExit) as exc:
+        main(["demo"])
+    assert exc.value.code == 2
+
+
+@pytest.fixture(scope="module")
+def score_files(tmp_path_factory):
+    d = tmp_path_factory.mktemp("scores")
+    s = make_parcels(1500, random_state=3)
+    w = make_parcels(800, season="winter", random_state=4)
+    src = s.source_prior
+    back = w.true_proba * (src / w.prior)
+    back /= back.sum(axis=1, keepdims=True)
+    good = pd.DataFrame({"risk": s.true_proba[:, 1], "damaged": s.target})
+    good.to_csv(d / "scores.csv", index=False)
+    good.to_parquet(d / "scores.parquet")
+    pd.DataFrame({"risk": back[:, 1]}).to_csv(d / "winter.csv", index=False)
+    return d, good
+
+
+def _report_args(path, out, *extra):
+    return ["report", "--scores", str(path), "--score-column", "risk", "--label-column",
+            "damaged", "--out", str(out), "--resamples", "20", *extra]
+
+
+@pytest.mark.parametrize("name", ["scores.csv", "scores.parquet"])
+def test_report_verb_good_files(score_files, tmp_path, capsys, name):
+    d, good = score_files
+    out = tmp_path / "r.html"
+    code = main(_report_args(d / name, out, "--cost-fp", "3", "--cost-fn", "40",
+                             "--capacity", "0.3", "--unlabelled", str(d / "winter.csv"),
+                             "--batch-size", "400"))
+    assert code == 0
+    msg = capsys.readouterr().out
+    ref = search_cutoff(good["risk"].to_numpy(), good["damaged"].to_numpy(),
+                        {"fp": 3.0, "fn": 40.0}, capacity=0.3, score_bounds=(0, 1))
+    assert f"cutoff {ref.cutoff:.4f}" in msg
+    page = _parse(out)
+    assert page.figures == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence"]
+
+
+def _write(tmp_path, name, text):
+    path = tmp_path / name
+    path.write_text(text)
+    return path
+
+
+@pytest.mark.parametrize(
+    "content, expected",
+    [
+        ("risk,label\n0.1,0\n0.8,1\n", ["no column 'damaged'", "--label-column"]),
+        ("risk,damaged\n0.1,0\nhigh,1\n0.3,0\n", ["column 'risk', row 3", "'high'"]),
+        ("risk,damaged\n0.1,0\n,1\n0.3,1\n", ["column 'risk', row 3", "not a finite number"]),
+        ("risk,damaged\n0.1,0\n0.2,1\n0.3,nan\n", ["column 'damaged', row 4"]),
+        ("", ["the file is empty"]),
+        ("risk,damaged\n", ["no rows"]),
+        ("risk,damaged\n0.1,0\n0.2,2\n0.3,1\n", ["column 'damaged', row 3", "not 0 or 1"]),
+        ("risk,damaged\n0.1,0\n0.2,0\n", ["column 'damaged'", "both 0 and 1"]),
+        ("risk,damaged\n0.1,0\n1.7,1\n", ["column 'risk', row 3", "not a probability"]),
+    ],
+)
+def test_report_verb_malformed_files(tmp_path, capsys, content, expected):
+    path = _write(tmp_path, "bad.csv", content)
+    out = tmp_path / "r.html"
+    assert main(_report_args(path, out)) == 1
+    err = capsys.readouterr().err.strip()
+    assert err.count("\n") == 0 and "Traceback" not in err
+    assert err.startswith("probwrap report: error: ") and str(path) in err
+    for piece in expected:
+        assert piece in err, err
+    assert not out.exists()
+
+
+def test_report_verb_missing_file_and_bad_unlabelled(tmp_path, capsys, score_files):
+    d, _ = score_files
+    assert main(_report_args(tmp_path / "nope.csv", tmp_path / "r.html")) == 1
+    assert "file not found" in capsys.readouterr().err
+    bad = _write(tmp_path, "u.csv", "risk\n0.2\n-0.1\n")
+    assert main(_report_args(d / "scores.csv", tmp_path / "r.html", "--unlabelled",
+                             str(bad))) == 1
+    err = capsys.readouterr().err
+    assert "u.csv: column 'risk', row 3" in err
+
+
+@pytest.mark.parametrize(
+    "extra",
+    [["--cost-fp", "3"], ["--capacity", "1.5", "--cost-fp", "3", "--cost-fn", "4"],
+     ["--capacity", "0.2"], ["--batch-size", "10"]],
+)
+def test_report_verb_usage_errors_exit_2(score_files, tmp_path, extra):
+    d, _ = score_files
+    with pytest.raises(SystemExit) as exc:
+        main(_report_args(d / "scores.csv", tmp_path / "r.html", *extra))
+    assert exc.value.code == 2
+
+
+def test_report_verb_costs_without_separation_is_data_error(score_files, tmp_path, capsys):
+    d, _ = score_files
+    code = main(_report_args(d / "scores.csv", tmp_path / "r.html", "--cost-fp", "0",
+                             "--cost-fn", "4"))
+    assert code == 1
+    assert "--cost-fp > --cost-tn" in capsys.readouterr().err

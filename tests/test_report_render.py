@@ -1,0 +1,106 @@
+"""The report renders in headless Chromium: no console errors, every figure laid out and visible.
+
+Skips when ``chromium`` is not on PATH (CI installs the Debian package; see .ci/run).
+"""
+
+import re
+import shutil
+import subprocess
+
+import numpy as np
+import pytest
+
+from probwrap.datasets import make_parcels
+from probwrap.report import write_report
+
+CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
+pytestmark = pytest.mark.skipif(
+    CHROMIUM is None,
+    reason="chromium is not on PATH: install the Debian package 'chromium' to run the report "
+    "rendering test",
+)
+
+_FLAGS = [
+    "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+    "--disable-background-networking", "--disable-component-update", "--disable-sync",
+    "--hide-scrollbars", "--window-size=1100,4200",
+]
+
+# measures each figure's <svg> after layout and writes the result into the DOM (test copy only;
+# the report itself carries no script)
+_PROBE = """<script>
+window.addEventListener('load', function () {
+  var out = [];
+  document.querySelectorAll('figure.pw-figure').forEach(function (f) {
+    var s = f.querySelector('svg'); var r = s ? s.getBoundingClientRect() : {width: 0, height: 0};
+    var st = s ? getComputedStyle(s) : {};
+    out.push(f.id + ':' + Math.round(r.width) + 'x' + Math.round(r.height) + ':' +
+             st.visibility + ':' + st.display);
+  });
+  var p = document.createElement('pre'); p.id = 'probe'; p.textContent = out.join(';');
+  document.body.appendChild(p);
+});
+</script>"""
+
+
+def _run(args, tmp_path, name):
+    profile = tmp_path / f"profile-{name}"
+    profile.mkdir()
+    return subprocess.run(
+        [CHROMIUM, *_FLAGS, f"--user-data-dir={profile}", *args],
+        capture_output=True, text=True, timeout=90,
+    )
+
+
+@pytest.fixture(scope="module")
+def report_path(tmp_path_factory):
+    train = make_parcels(2000, random_state=30)
+    winter = make_parcels(1000, season="winter", random_state=31)
+    src = train.source_prior
+    back = winter.true_proba * (src / winter.prior)
+    back /= back.sum(axis=1, keepdims=True)
+    path = tmp_path_factory.mktemp("render") / "report.html"
+    write_report(path, y_true=train.target, y_prob=train.true_proba[:, 1],
+                 costs={"fp": 3.0, "fn": 40.0}, capacity=0.2, unlabelled_prob=back[:, 1],
+                 batch_size=250, n_resamples=20)
+    return path
+
+
+def test_no_console_errors_and_screenshot_not_blank(report_path, tmp_path):
+    shot = tmp_path / "shot.png"
+    proc = _run(["--enable-logging=stderr", "--v=0", f"--screenshot={shot}",
+                 report_path.as_uri()], tmp_path, "shot")
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    console = [line for line in proc.stderr.splitlines() if "CONSOLE" in line]
+    assert console == [], console
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.image as mpimg
+
+    img = mpimg.imread(shot)
+    assert img.shape[0] > 1000 and img.shape[1] > 800
+    # not blank: many distinct colours, and the figures' teal lines appear
+    flat = (img[..., :3] * 255).round().astype(int).reshape(-1, 3)
+    assert np.unique(flat[::7], axis=0).shape[0] > 200
+    teal = np.array([0x0F, 0x6E, 0x74])
+    assert np.sum(np.all(np.abs(flat - teal) <= 12, axis=1)) > 500
+
+
+def test_every_figure_is_laid_out(report_path, tmp_path):
+    page = report_path.read_text(encoding="utf-8")
+    assert "<script" not in page
+    probed = tmp_path / "probed.html"
+    probed.write_text(page.replace("</body>", _PROBE + "</body>"), encoding="utf-8")
+    proc = _run(["--dump-dom", probed.as_uri()], tmp_path, "dom")
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    match = re.search(r'<pre id="probe">([^<]*)</pre>', proc.stdout)
+    assert match, proc.stdout[-1000:]
+    entries = match.group(1).split(";")
+    ids = [e.split(":")[0] for e in entries]
+    assert ids == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence"]
+    for entry in entries:
+        fid, size, visibility, display = entry.split(":")
+        w, h = (int(v) for v in size.split("x"))
+        assert w > 200 and h > 150, entry
+        assert visibility == "visible" and display != "none", entry
