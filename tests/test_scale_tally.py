@@ -248,3 +248,22 @@ def test_bad_labels_scores_and_merges():
     with pytest.raises(ValueError, match="tallies"):
         merge_tallies([])
     assert isinstance(tally_scores([0.0], [1]), ScoreTally)
+
+
+def test_core_imports_and_tallies_without_dask():
+    import subprocess
+    import sys
+
+    code = (
+        "import sys\n"
+        "class Block:\n"
+        "    def find_spec(self, name, path=None, target=None):\n"
+        "        if name == 'dask' or name.startswith(('dask.', 'distributed')):\n"
+        "            raise ImportError('blocked: ' + name)\n"
+        "sys.meta_path.insert(0, Block())\n"
+        "import probwrap, probwrap.scale, probwrap.aggregated\n"
+        "t = probwrap.scale.tally_scores([0.1, 0.2], [0, 1])\n"
+        "assert t.n_bins == 2 and not any(m.startswith('dask') for m in sys.modules)\n"
+    )
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
