@@ -11,12 +11,13 @@ __all__ = ["IsotonicMap"]
 
 
 def _pool_ties(
-    scores: np.ndarray, y: np.ndarray, w: np.ndarray
+    scores: np.ndarray, y: np.ndarray, w: np.ndarray, *, unit_weight_as_none: bool = False
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Sort once and pool tied scores.
 
     Rows of zero weight carry no information and are left out. Returns the distinct scores
-    (increasing), the total weight of each and the weighted sum of the labels of each.
+    (increasing), the total weight of each (``None`` for all-ones weights without ties when
+    ``unit_weight_as_none``) and the weighted sum of the labels of each.
     """
     if np.all(w == 1.0) and np.all((y == 0.0) | (y == 1.0)):
         # Unit weights and 0/1 labels (the common case): sort the scores of each class
@@ -32,7 +33,7 @@ def _pool_ties(
         first = np.ones(s.shape[0], dtype=bool)
         np.not_equal(s[1:], s[:-1], out=first[1:])
         if first.all():
-            return s, np.ones(s.shape[0]), is_pos
+            return s, (None if unit_weight_as_none else np.ones(s.shape[0])), is_pos
         starts = np.flatnonzero(first)
         weight = np.diff(np.append(starts, s.shape[0])).astype(float)
         return s[starts], weight, np.add.reduceat(is_pos, starts)
@@ -96,12 +97,14 @@ class IsotonicMap(CalibrationMap):
         pass
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
-        distinct, weight, label_sum = _pool_ties(scores, y, w)
+        distinct, weight, label_sum = _pool_ties(scores, y, w, unit_weight_as_none=True)
         self.thresholds_ = distinct
         # The pooling pass itself is SciPy's compiled weighted PAV (scipy.optimize, since 1.12):
         # one O(m) pass over the m distinct scores, an order of magnitude faster than a Python
         # loop, which keeps the whole fit within a small multiple of the sort.
-        fit = isotonic_regression(label_sum / weight, weights=weight, increasing=True)
+        # (weight is None: unit weights and no ties, label_sum is then the 0/1 labels in order)
+        means = label_sum if weight is None else label_sum / weight
+        fit = isotonic_regression(means, weights=weight, increasing=True)
         self.values_ = np.clip(fit.x, 0.0, 1.0)
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
