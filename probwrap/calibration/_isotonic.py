@@ -25,8 +25,9 @@ def _pool_ties(
         # argsort, which is linear for two runs. Cheaper than one argsort of all scores followed
         # by random-access gathers, and exactly the same order (ties: negatives first).
         positive = y == 1.0
-        neg = np.sort(scores[~positive])
-        both = np.concatenate([neg, np.sort(scores[positive])])
+        # np.compress is several times faster than boolean-mask indexing on random masks
+        neg = np.sort(np.compress(~positive, scores))
+        both = np.concatenate([neg, np.sort(np.compress(positive, scores))])
         order = np.argsort(both, kind="stable")
         s = both[order]
         is_pos = (order >= neg.shape[0]).astype(float)
