@@ -1,4 +1,4 @@
-"""Display objects for calibration, cost, decision curves and prevalence (optional ``plot`` extra).
+"""Display objects for calibration, cost, decision curves, actions and prevalence (optional ``plot`` extra).
 
 Each display follows scikit-learn's plotting convention: build it with ``from_estimator`` or
 ``from_predictions`` (which compute the numbers with :mod:`probwrap.metrics`,
@@ -7,15 +7,18 @@ attributes, and find the drawing in ``ax_`` and ``figure_``. matplotlib is impor
 something is drawn; figures are created without pyplot, so no window opens.
 """
 
+from ._actions import ActionShareDisplay
 from ._cost import CostCurveDisplay
 from ._decision_curve import DecisionCurveDisplay
 from ._intervals import consistency_band, wilson_interval
-from ._prevalence import PrevalenceDriftDisplay
+from ._prevalence import ClassPriorDisplay, PrevalenceDriftDisplay
 from ._reliability import ReliabilityDiagram
 from ._style import PALETTE
 
 __all__ = [
     "PALETTE",
+    "ActionShareDisplay",
+    "ClassPriorDisplay",
     "CostCurveDisplay",
     "DecisionCurveDisplay",
     "PrevalenceDriftDisplay",

@@ -6,7 +6,23 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["positive_proba", "binary_labels"]
+__all__ = ["positive_proba", "binary_labels", "class_proba"]
+
+
+def class_proba(estimator: Any, X: Any, *, name: str = "estimator") -> np.ndarray:
+    """Class probabilities (n, k) from a fitted classifier, columns in ``classes_`` order."""
+    if not hasattr(estimator, "predict_proba"):
+        raise ValueError(
+            f"`{name}` ({type(estimator).__name__}) has no predict_proba; wrap it in "
+            "probwrap.CalibrationWrapper to turn its scores into probabilities."
+        )
+    proba = np.asarray(estimator.predict_proba(X), dtype=float)
+    if proba.ndim != 2 or proba.shape[1] < 2:
+        raise ValueError(
+            f"`{name}`'s predict_proba must return (n, n_classes) probabilities; got shape "
+            f"{proba.shape}."
+        )
+    return proba
 
 
 def positive_proba(estimator: Any, X: Any, *, name: str = "estimator") -> np.ndarray:

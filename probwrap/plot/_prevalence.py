@@ -9,7 +9,7 @@ import numpy as np
 from ..shift import prior_by_batch
 from ._style import PALETTE, new_axes, style_axes
 
-__all__ = ["PrevalenceDriftDisplay"]
+__all__ = ["ClassPriorDisplay", "PrevalenceDriftDisplay"]
 
 _FIELDS = ("batch", "n_rows", "prior", "lower", "upper", "shift_pvalue")
 
@@ -194,6 +194,103 @@ class PrevalenceDriftDisplay:
         ax.set_ylim(bottom=0)
         ax.set_title("Prevalence by batch", fontsize=9)
         ax.legend(fontsize=7, frameon=False, loc="best")
+        self.ax_ = ax
+        self.figure_ = ax.figure
+        return self
+
+
+class ClassPriorDisplay:
+    """Source share of every class beside its estimated share in new data, with intervals.
+
+    Parameters
+    ----------
+    source_prior : array-like of shape (k,)
+        Class shares of the labelled (source) rows.
+    target_prior : array-like of shape (k,)
+        Estimated class shares of the unlabelled rows.
+    interval : array-like of shape (k, 2), optional
+        Lower and upper end of each estimated share.
+    class_names : sequence of str, optional
+    shift_pvalue : float, optional
+        p-value of the shift test, shown in the title.
+
+    Attributes
+    ----------
+    ax_, figure_ : matplotlib Axes and Figure
+    source_bars_, target_bars_ : BarContainer
+        Bar heights are the shares.
+    interval_artist_ : ErrorbarContainer or None
+        Around the target bars.
+
+    Examples
+    --------
+    >>> import matplotlib
+    >>> matplotlib.use("Agg")
+    >>> from probwrap.plot import ClassPriorDisplay
+    >>> disp = ClassPriorDisplay(source_prior=[0.8, 0.15, 0.05], target_prior=[0.6, 0.3, 0.1],
+    ...                          interval=[[0.55, 0.65], [0.25, 0.35], [0.07, 0.13]]).plot()
+    >>> [round(float(b.get_height()), 2) for b in disp.target_bars_]
+    [0.6, 0.3, 0.1]
+    """
+
+    def __init__(
+        self,
+        *,
+        source_prior: Any,
+        target_prior: Any,
+        interval: Any = None,
+        class_names: Any = None,
+        shift_pvalue: float | None = None,
+    ) -> None:
+        src = np.asarray(source_prior, dtype=float)
+        tgt = np.asarray(target_prior, dtype=float)
+        if src.ndim != 1 or tgt.shape != src.shape:
+            raise ValueError(
+                f"`source_prior` and `target_prior` must be 1-d of equal length; got shapes "
+                f"{src.shape} and {tgt.shape}."
+            )
+        k = src.shape[0]
+        iv = None if interval is None else np.asarray(interval, dtype=float)
+        if iv is not None and iv.shape != (k, 2):
+            raise ValueError(f"`interval` must have shape ({k}, 2); got {iv.shape}.")
+        names = [str(j) for j in range(k)] if class_names is None else [str(c) for c in
+                                                                       class_names]
+        if len(names) != k:
+            raise ValueError(f"`class_names` must name the {k} classes; got {len(names)}.")
+        self.source_prior = src
+        self.target_prior = tgt
+        self.interval = iv
+        self.class_names = names
+        self.shift_pvalue = shift_pvalue
+
+    def plot(self, ax: Any = None) -> ClassPriorDisplay:
+        """Draw paired bars per class (on ``ax``, or a new figure)."""
+        ax = new_axes(ax)
+        style_axes(ax)
+        x = np.arange(self.source_prior.shape[0])
+        self.source_bars_ = ax.bar(x - 0.2, self.source_prior, width=0.38,
+                                   color=PALETTE["source"], label="source (labelled rows)")
+        self.target_bars_ = ax.bar(x + 0.2, self.target_prior, width=0.38,
+                                   color=PALETTE["shifted"], label="estimated (unlabelled rows)")
+        self.interval_artist_ = None
+        if self.interval is not None:
+            yerr = np.vstack([self.target_prior - self.interval[:, 0],
+                              self.interval[:, 1] - self.target_prior])
+            self.interval_artist_ = ax.errorbar(
+                x + 0.2, self.target_prior, yerr=np.maximum(yerr, 0.0), fmt="none",
+                ecolor=PALETTE["ink"], elinewidth=1.1, capsize=3, label="interval",
+            )
+        ax.set_xticks(x, self.class_names, fontsize=8)
+        ax.set_ylabel("class share")
+        top = max(float(self.source_prior.max()), float(self.target_prior.max()))
+        if self.interval is not None:
+            top = max(top, float(self.interval[:, 1].max()))
+        ax.set_ylim(0, min(1.0, top * 1.15 + 0.02))
+        title = "Class shares: source and estimated"
+        if self.shift_pvalue is not None:
+            title += f" (shift test p = {self.shift_pvalue:.3g})"
+        ax.set_title(title, fontsize=9)
+        ax.legend(loc="upper right", fontsize=7, frameon=False)
         self.ax_ = ax
         self.figure_ = ax.figure
         return self

@@ -7,7 +7,7 @@ from typing import Any
 import numpy as np
 
 from ..metrics import expected_calibration_error, reliability_table
-from ._common import binary_labels, estimator_classes, positive_proba
+from ._common import binary_labels, class_proba, estimator_classes
 from ._intervals import consistency_band, wilson_interval
 from ._style import PALETTE, new_axes, style_axes
 
@@ -37,6 +37,9 @@ class ReliabilityDiagram:
     confidence_level : float
     name : str, optional
         Legend label for the observed curve.
+    class_index : int, optional
+        For 2-d probabilities drawn one-vs-rest: the column shown. None for the binary and the
+        top-label forms.
 
     Attributes
     ----------
@@ -63,6 +66,18 @@ class ReliabilityDiagram:
     ...     parcels.target, parcels.true_proba[:, 1], n_bins=5)
     >>> bool(disp.band_low[0] <= disp.table.observed_frequency[0] <= disp.band_high[0])
     True
+
+    Three outcomes (intact / dented / broken): the top-label (confidence) diagram of Guo et al.
+    (2017), or one class against the rest.
+
+    >>> three = make_parcels(2000, n_outcomes=3, random_state=0)
+    >>> top = ReliabilityDiagram.from_predictions(three.target, three.true_proba, n_bins=5)
+    >>> top.table.top_label, top.class_index
+    (True, None)
+    >>> broken = ReliabilityDiagram.from_predictions(
+    ...     three.target, three.true_proba, class_index=2, n_bins=5)
+    >>> broken.table.top_label, broken.class_index
+    (False, 2)
     """
 
     def __init__(
@@ -75,7 +90,9 @@ class ReliabilityDiagram:
         calibration_error: float,
         confidence_level: float = 0.95,
         name: str | None = None,
+        class_index: int | None = None,
     ) -> None:
+        self.class_index = class_index
         self.table = table
         self.band_low = band_low
         self.band_high = band_high
@@ -100,16 +117,23 @@ class ReliabilityDiagram:
         pos_label: Any = None,
         random_state: Any = 0,
         name: str | None = None,
+        class_index: int | None = None,
+        labels: Any = None,
         ax: Any = None,
     ) -> ReliabilityDiagram:
-        """Compute the diagram from labels and positive-class probabilities and draw it.
+        """Compute the diagram from labels and probabilities and draw it.
 
         Parameters
         ----------
         y_true : array-like of shape (n,)
-            Binary labels.
-        y_prob : array-like of shape (n,)
-            Probabilities of the positive class.
+            Binary labels for 1-d ``y_prob``. For 2-d ``y_prob``: column indices ``0..k-1``, or
+            the labels named by ``labels``.
+        y_prob : array-like of shape (n,) or (n, k)
+            Probabilities of the positive class, or class probabilities (rows sum to one). 2-d
+            probabilities give the top-label (confidence) diagram of Guo et al. (2017): each row
+            is binned by its largest probability and the observed frequency is the accuracy of
+            the arg-max class; with ``class_index`` they give the one-vs-rest diagram of that
+            column instead.
         n_bins : int, default=10
         strategy : {"uniform", "quantile"}, default="uniform"
             Bin layout, as in :func:`probwrap.metrics.reliability_table`.
@@ -127,6 +151,11 @@ class ReliabilityDiagram:
             Seed of the consistency simulation.
         name : str, optional
             Legend label.
+        class_index : int, optional
+            2-d ``y_prob`` only: draw column ``class_index`` against the indicator of that class
+            (one-vs-rest) instead of the top-label diagram.
+        labels : array-like of shape (k,), optional
+            2-d ``y_prob`` only: the class of each column (default: ``0..k-1``).
         ax : matplotlib Axes, optional
             Where to draw; a new figure otherwise.
 
@@ -137,13 +166,29 @@ class ReliabilityDiagram:
         if band not in _BANDS:
             raise ValueError(f"`band` must be one of {_BANDS}; got {band!r}.")
         y_arr = np.asarray(y_true)
+        p = np.asarray(y_prob, dtype=float)
+        if p.ndim == 2:
+            if pos_label is not None:
+                raise ValueError(
+                    "`pos_label` applies to 1-d `y_prob`; for 2-d probabilities use "
+                    "`class_index` (one-vs-rest) or neither (top-label)."
+                )
+            return cls._from_proba_2d(
+                y_arr, p, n_bins=n_bins, strategy=strategy, band=band,
+                confidence_level=confidence_level, n_draws=n_draws,
+                sample_weight=sample_weight, random_state=random_state, name=name,
+                class_index=class_index, labels=labels, ax=ax,
+            )
+        if class_index is not None or labels is not None:
+            raise ValueError(
+                "`class_index` and `labels` apply to 2-d `y_prob` (n, k); got 1-d `y_prob`."
+            )
         labels = None
         if pos_label is not None:
             others = [v for v in np.unique(y_arr).tolist() if v != pos_label]
             if len(others) > 1:
                 raise ValueError(f"`y_true` must hold two classes; got {len(others) + 1}.")
             labels = [others[0] if others else (0 if pos_label != 0 else 1), pos_label]
-        p = np.asarray(y_prob, dtype=float)
         table = reliability_table(
             y_arr, p, n_bins=n_bins, strategy=strategy, sample_weight=sample_weight,
             labels=labels,
@@ -154,18 +199,8 @@ class ReliabilityDiagram:
             y_arr, p, n_bins=n_bins, strategy=strategy, sample_weight=sample_weight,
             labels=labels,
         )
-        if band == "wilson":
-            low, high = wilson_interval(
-                table.observed_frequency * table.weight, table.weight, confidence_level
-            )
-        elif band == "consistency":
-            idx = np.searchsorted(table.upper[:-1], p, side="right")
-            low, high = consistency_band(
-                p, idx, table.weight.shape[0], sample_weight=sample_weight,
-                confidence_level=confidence_level, n_draws=n_draws, random_state=random_state,
-            )
-        else:
-            low = high = np.full(table.weight.shape[0], np.nan)
+        low, high = _bands(table, p, band, sample_weight, confidence_level, n_draws,
+                           random_state)
         disp = cls(
             table=table, band_low=low, band_high=high, band=band, calibration_error=ece,
             confidence_level=confidence_level, name=name,
@@ -173,15 +208,60 @@ class ReliabilityDiagram:
         return disp.plot(ax=ax)
 
     @classmethod
+    def _from_proba_2d(
+        cls, y_arr, p, *, n_bins, strategy, band, confidence_level, n_draws, sample_weight,
+        random_state, name, class_index, labels, ax,
+    ) -> ReliabilityDiagram:
+        k = p.shape[1]
+        if labels is not None:
+            labels = np.asarray(labels)
+            if labels.ndim != 1 or labels.shape[0] != k:
+                raise ValueError(
+                    f"`labels` must name the class of each of the {k} columns of `y_prob`; got "
+                    f"shape {labels.shape}."
+                )
+        if class_index is None:
+            table = reliability_table(y_arr, p, n_bins=n_bins, strategy=strategy,
+                                      sample_weight=sample_weight, labels=labels)
+            values = p.max(axis=1)
+        else:
+            if not (isinstance(class_index, (int, np.integer)) and 0 <= class_index < k):
+                raise ValueError(
+                    f"`class_index` must be a column index in [0, {k}); got {class_index!r}."
+                )
+            # validates the labels and the probabilities once, for the whole matrix
+            reliability_table(y_arr, p, n_bins=1, sample_weight=sample_weight, labels=labels)
+            cls_labels = np.arange(k) if labels is None else labels
+            indicator = (y_arr == cls_labels[class_index]).astype(float)
+            values = p[:, class_index]
+            table = reliability_table(indicator, values, n_bins=n_bins, strategy=strategy,
+                                      sample_weight=sample_weight, labels=[0.0, 1.0])
+        low, high = _bands(table, values, band, sample_weight, confidence_level, n_draws,
+                           random_state)
+        disp = cls(
+            table=table, band_low=low, band_high=high, band=band,
+            calibration_error=table.calibration_error, confidence_level=confidence_level,
+            name=name, class_index=None if class_index is None else int(class_index),
+        )
+        return disp.plot(ax=ax)
+
+    @classmethod
     def from_estimator(
         cls, estimator: Any, X: Any, y: Any, *, name: str | None = None, **kwargs: Any
     ) -> ReliabilityDiagram:
-        """Compute the diagram from a fitted binary classifier on labelled rows ``X, y``.
+        """Compute the diagram from a fitted classifier on labelled rows ``X, y``.
 
-        The positive class is ``estimator.classes_[1]``; other keyword arguments are as for
-        :meth:`from_predictions`.
+        Binary: the positive class is ``estimator.classes_[1]``. More classes: the top-label
+        diagram, or one-vs-rest with ``class_index=``; the columns are ``estimator.classes_``.
+        Other keyword arguments are as for :meth:`from_predictions`.
         """
-        p = positive_proba(estimator, X)
+        proba = class_proba(estimator, X)
+        if proba.shape[1] > 2:
+            return cls.from_predictions(
+                y, proba, labels=estimator_classes(estimator),
+                name=name or type(estimator).__name__, **kwargs,
+            )
+        p = proba[:, 1]
         y01 = binary_labels(y, estimator_classes(estimator))
         return cls.from_predictions(
             y01, p, pos_label=1.0, name=name or type(estimator).__name__, **kwargs
@@ -230,8 +310,11 @@ class ReliabilityDiagram:
         )
         ax.set_xlim(0, 1)
         ax.set_ylim(0, 1)
-        ax.set_ylabel("observed frequency")
-        ax.set_title(f"Reliability (calibration error {self.calibration_error:.4f})",
+        top = bool(getattr(t, "top_label", False))
+        ax.set_ylabel("accuracy of the top class" if top else "observed frequency")
+        form = (" \u2014 top label" if top else
+                "" if self.class_index is None else f" \u2014 class {self.class_index} vs rest")
+        ax.set_title(f"Reliability{form} (calibration error {self.calibration_error:.4f})",
                      fontsize=9)
         ax.legend(loc="upper left", fontsize=7, frameon=False)
         centres = (t.lower + t.upper) / 2.0
@@ -239,8 +322,27 @@ class ReliabilityDiagram:
         self.bars_ = hist_ax.bar(centres, t.weight, width=widths, color=PALETTE["counts"],
                                  edgecolor=PALETTE["ink"], linewidth=0.4)
         hist_ax.set_ylabel("rows", fontsize=8)
-        hist_ax.set_xlabel("mean forecast probability")
+        hist_ax.set_xlabel("mean confidence (largest probability)" if top
+                           else "mean forecast probability")
         self.ax_ = ax
         self.hist_ax_ = hist_ax
         self.figure_ = ax.figure
         return self
+
+
+def _bands(table, values, band, sample_weight, confidence_level, n_draws, random_state):
+    """Per-bin Wilson interval, consistency band, or NaN (no band)."""
+    if band == "wilson":
+        return wilson_interval(
+            table.observed_frequency * table.weight, table.weight, confidence_level
+        )
+    if band == "consistency":
+        # for the top-label form each row's outcome (top class correct) would be a Bernoulli
+        # draw with its confidence if calibrated, so the same simulation applies to `values`
+        idx = np.searchsorted(table.upper[:-1], values, side="right")
+        return consistency_band(
+            values, idx, table.weight.shape[0], sample_weight=sample_weight,
+            confidence_level=confidence_level, n_draws=n_draws, random_state=random_state,
+        )
+    nan = np.full(table.weight.shape[0], np.nan)
+    return nan, nan.copy()

@@ -12,11 +12,14 @@ from pathlib import Path
 from typing import Any
 
 from ._content import MetricRow, ReportContent, RuleRow, collect_content
+from ._general import ActionRuleRow, MulticlassReportContent
 from ._html import CAUTIONS, figure_to_svg, make_figures, render_html
 
 __all__ = [
     "CAUTIONS",
+    "ActionRuleRow",
     "MetricRow",
+    "MulticlassReportContent",
     "ReportContent",
     "RuleRow",
     "build_report",
@@ -25,7 +28,7 @@ __all__ = [
 ]
 
 
-def build_report(**kwargs: Any) -> tuple[ReportContent, str]:
+def build_report(**kwargs: Any) -> tuple[Any, str]:
     """Compute the report and return ``(content, html)`` without writing anything.
 
     Keyword arguments as for :func:`write_report` (without ``path``).
@@ -55,7 +58,9 @@ def write_report(
     confidence_level: float = 0.95,
     random_state: Any = 0,
     title: str = "probwrap report",
-) -> ReportContent:
+    row_costs: Any = None,
+    class_names: Any = None,
+) -> ReportContent | MulticlassReportContent:
     """Write a self-contained HTML report and return the numbers it shows.
 
     Sections: calibration (Brier score, log loss, expected calibration error, calibration slope
@@ -65,6 +70,16 @@ def write_report(
     curves), prevalence (source versus estimated target prevalence with interval and shift test,
     the cutoff moved to the new prevalence, prevalence by batch) and cautions.
 
+    More than two classes, more than two actions (e.g. ship / repack / hold, or a reject
+    action) or per-row costs give the general form instead: multiclass log loss and Brier
+    score, top-label (Guo et al. 2017) and classwise (Kull et al. 2019) calibration error with
+    bootstrap intervals and the top-label reliability diagram; the Bayes actions (least
+    expected cost), a fitted policy's actions (tuned class offsets, capacity) and the
+    alternatives (most probable class as the action, the best action as if the most probable
+    class were certain, one action for every row) with their realised cost and the share of
+    each action, drawn as bars; per-class source and estimated target shares with intervals and
+    the shift test. Cost and decision curves need one cutoff, so they are left out there.
+
     Parameters
     ----------
     path : str or Path
@@ -72,7 +87,7 @@ def write_report(
     y_true, y_prob : array-like of shape (n,)
         Labels and positive-class probabilities of labelled evaluation rows (held-out rows:
         calibration measured on training rows is optimistic). Give these, or ``model``.
-    model : fitted binary classifier
+    model : fitted classifier
         Used with ``X`` and ``y`` instead of ``y_true``/``y_prob``. A
         :class:`~probwrap.CostPolicyWrapper` (possibly wrapping others) supplies the costs,
         capacity, action names and its tuned cutoff with interval; a
@@ -80,13 +95,16 @@ def write_report(
     X, y : labelled rows for ``model``.
     sample_weight : array-like of shape (n,), optional
         Weights of the labelled rows.
-    costs : mapping or array-like of shape (2, 2), optional
-        ``{"tp", "fp", "fn", "tn"}`` or a matrix (rows true class, columns actions). Without
-        costs the decisions section shows only the decision curve.
-    capacity : float in (0, 1], optional
-        Largest share of rows that may receive the second action.
-    action_names : pair of str, optional
-        Names of the two actions (default "no action", "act").
+    costs : mapping or array-like of shape (n_classes, n_actions), optional
+        ``{"tp", "fp", "fn", "tn"}`` (binary) or a matrix (rows true class in column order of
+        the probabilities, columns actions). Without costs the decisions section shows only the
+        decision curve (binary) or nothing (otherwise).
+    capacity : float in (0, 1] or dict, optional
+        Largest share of rows that may receive the second of two actions, or ``{action name:
+        share}`` for one named action.
+    action_names : sequence of str, optional
+        Names of the actions, one per column of ``costs`` (binary default "no action", "act";
+        otherwise the class names when there are as many actions as classes).
     unlabelled_prob : array-like of shape (m,), optional
         Positive-class probabilities of unlabelled deployment rows (or use ``X_unlabelled``
         with ``model``); their prevalence is estimated by EM (Saerens et al. 2002).
@@ -103,10 +121,17 @@ def write_report(
     random_state : int, RandomState or None, default=0
         Seed of the bootstraps.
     title : str, default="probwrap report"
+    row_costs : array-like of shape (n, n_classes, n_actions), optional
+        One cost matrix per labelled row (e.g. from each parcel's value); the report shows
+        their weighted mean. A :class:`~probwrap.CostPolicyWrapper` with costs given as a
+        function of ``X`` supplies them itself.
+    class_names : sequence of str, optional
+        General form with ``y_true``/``y_prob``: the class of each column of ``y_prob``
+        (default: the sorted distinct labels of ``y_true``).
 
     Returns
     -------
-    ReportContent
+    ReportContent or MulticlassReportContent
         The numbers shown, for checking or further use.
 
     Examples
@@ -125,6 +150,15 @@ def write_report(
     ...                        X_unlabelled=winter.data, n_resamples=30)
     >>> out.exists(), bool(content.target_prevalence > content.source_prevalence)
     (True, True)
+
+    Three outcomes (intact / dented / broken) and three actions:
+
+    >>> three = make_parcels(1500, n_outcomes=3, random_state=3)
+    >>> costs = [[0.0, 4.0, 12.0], [20.0, 4.0, 12.0], [60.0, 64.0, 12.0]]
+    >>> content = write_report(out, y_true=three.target, y_prob=three.true_proba, costs=costs,
+    ...                        action_names=["ship", "repack", "hold"], n_resamples=20)
+    >>> [r.key for r in content.rules][:2]
+    ['chosen', 'argmax']
     """
     content, page = build_report(
         y_true=y_true, y_prob=y_prob, model=model, X=X, y=y, sample_weight=sample_weight,
@@ -132,6 +166,7 @@ def write_report(
         unlabelled_prob=unlabelled_prob, X_unlabelled=X_unlabelled, prior_shift=prior_shift,
         batch_size=batch_size, n_bins=n_bins, n_resamples=n_resamples,
         confidence_level=confidence_level, random_state=random_state, title=title,
+        row_costs=row_costs, class_names=class_names,
     )
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)

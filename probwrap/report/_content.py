@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -200,14 +201,30 @@ def collect_content(
     confidence_level: float = 0.95,
     random_state: Any = 0,
     title: str = "probwrap report",
-) -> ReportContent:
-    """Compute the report's numbers; see :func:`probwrap.report.write_report`."""
+    row_costs: Any = None,
+    class_names: Any = None,
+) -> Any:
+    """Compute the report's numbers; see :func:`probwrap.report.write_report`.
+
+    Returns a :class:`ReportContent` for binary probabilities with two actions, a
+    :class:`~probwrap.report.MulticlassReportContent` otherwise.
+    """
     from sklearn.utils import check_random_state
 
     rng = check_random_state(random_state)
     chain = _inner_chain(model)
     policy = _find(chain, "CostPolicyWrapper")
     calib = _find(chain, "CalibrationWrapper")
+    general = _general_report(
+        y_true=y_true, y_prob=y_prob, model=model, X=X, y=y, sample_weight=sample_weight,
+        costs=costs, row_costs=row_costs, capacity=capacity, action_names=action_names,
+        unlabelled_prob=unlabelled_prob, X_unlabelled=X_unlabelled, prior_shift=prior_shift,
+        batch_size=batch_size, n_bins=n_bins, n_resamples=n_resamples,
+        confidence_level=confidence_level, rng=rng, title=title, policy=policy, calib=calib,
+        class_names=class_names,
+    )
+    if general is not None:
+        return general
 
     if model is not None:
         if X is None or y is None:
@@ -372,3 +389,86 @@ def collect_content(
                     row.target_flagged_share = float(act.mean())
                     row.target_expected_cost = float(E[np.arange(E.shape[0]), act].mean())
     return content
+
+
+def _needs_general(k: int, costs: Any, row_costs: Any, policy: Any) -> bool:
+    """Whether the report is beyond binary-with-two-actions (one cutoff)."""
+    if k > 2 or row_costs is not None:
+        return True
+    if costs is not None and not isinstance(costs, Mapping):
+        shape = np.shape(costs)
+        return len(shape) == 2 and shape != (2, 2)
+    if costs is None and policy is not None:
+        return (getattr(policy, "cost_matrix_", None) is None and callable(policy.costs)) or (
+            len(getattr(policy, "actions_", ())) != 2
+        )
+    return False
+
+
+def _general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_costs, capacity,
+                    action_names, unlabelled_prob, X_unlabelled, prior_shift, batch_size,
+                    n_bins, n_resamples, confidence_level, rng, title, policy, calib,
+                    class_names) -> Any:
+    """The multiclass / multi-action content, or None when the binary report applies."""
+    from ..plot._common import class_proba
+    from ._general import _class_index, _proba_2d, collect_general_content
+
+    if model is not None:
+        if X is None or y is None:
+            return None  # the binary path raises the clear error
+        proba = class_proba(model, X, name="model")
+        k = proba.shape[1]
+        if not _needs_general(k, costs, row_costs, policy):
+            return None
+        if y_prob is not None or y_true is not None:
+            raise ValueError("Give either `model` with `X`, `y`, or `y_true` with `y_prob`.")
+        classes = np.asarray(getattr(model, "classes_", np.arange(k)))
+        y_index = _class_index(y, classes, "y")
+        if unlabelled_prob is None and X_unlabelled is not None:
+            unlabelled_prob = class_proba(model, X_unlabelled, name="model")
+    else:
+        if y_true is None or y_prob is None:
+            return None
+        shape = np.shape(y_prob)
+        k = shape[1] if len(shape) == 2 else 2
+        if not _needs_general(k, costs, row_costs, None):
+            return None
+        proba = _proba_2d(y_prob, "y_prob")
+        y_arr = np.asarray(y_true)
+        if y_arr.ndim != 1:
+            raise ValueError(f"`y_true` must be 1-d; got shape {y_arr.shape}.")
+        if y_arr.shape[0] != proba.shape[0]:
+            raise ValueError(f"`y_true` has {y_arr.shape[0]} rows but `y_prob` has "
+                             f"{proba.shape[0]}; they must match.")
+        if class_names is not None:
+            classes = np.asarray(class_names)
+            if classes.shape != (k,):
+                raise ValueError(f"`class_names` must name the class of each of the {k} "
+                                 f"columns of `y_prob`; got {len(classes)}.")
+        else:
+            found = np.unique(y_arr)
+            if found.shape[0] == k:
+                classes = found
+            elif y_arr.dtype.kind in "iu" and found.min() >= 0 and found.max() < k:
+                classes = np.arange(k)
+            else:
+                raise ValueError(
+                    f"`y_true` holds {found.shape[0]} distinct labels but `y_prob` has {k} "
+                    "columns; pass `class_names` (the class of each column)."
+                )
+        y_index = _class_index(y_arr, classes, "y_true")
+    if batch_size is not None:
+        raise ValueError("`batch_size` (prevalence by batch) is available for binary reports "
+                         "with two actions only.")
+    q = None if unlabelled_prob is None else _proba_2d(unlabelled_prob, "unlabelled_prob")
+    if q is not None and q.shape[1] != proba.shape[1]:
+        raise ValueError(f"`unlabelled_prob` has {q.shape[1]} columns but the labelled "
+                         f"probabilities have {proba.shape[1]}.")
+    names = tuple(str(c) for c in (class_names if class_names is not None else classes))
+    return collect_general_content(
+        y_index=y_index, proba=proba, class_names=names, sample_weight=sample_weight,
+        costs=costs, row_costs=row_costs, capacity=capacity, action_names=action_names,
+        policy=policy, calib=calib, X=X, unlabelled_proba=q, X_unlabelled=X_unlabelled,
+        prior_shift=prior_shift, n_bins=n_bins, n_resamples=n_resamples,
+        confidence_level=confidence_level, rng=rng, title=title,
+    )

@@ -298,7 +298,13 @@ def _cautions_section() -> str:
     )
 
 
-def _glance(c: ReportContent) -> str:
+def _glance(c: Any) -> str:
+    if getattr(c, "kind", "binary") == "general":
+        from ._general_html import general_glance
+
+        items = general_glance(c)
+        li = "".join(f"<li>{_text(k)}<b>{_text(v)}</b></li>" for k, v in items)
+        return f'<ul class="pw-glance" id="glance">{li}</ul>'
     items = [("labelled rows", f"{c.n_rows}"), ("observed prevalence", f"{c.prevalence:.4f}")]
     if c.chosen_cutoff is not None:
         items.append(("chosen cutoff", f"{c.chosen_cutoff:.4f}"))
@@ -308,8 +314,12 @@ def _glance(c: ReportContent) -> str:
     return f'<ul class="pw-glance" id="glance">{li}</ul>'
 
 
-def make_figures(c: ReportContent) -> dict[str, str]:
+def make_figures(c: Any) -> dict[str, str]:
     """Draw every figure of the report and return them as inline SVG strings."""
+    if getattr(c, "kind", "binary") == "general":
+        from ._general_html import general_figures
+
+        return general_figures(c)
     figs: dict[str, str] = {}
     rel = ReliabilityDiagram.from_predictions(
         c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
@@ -336,8 +346,15 @@ def make_figures(c: ReportContent) -> dict[str, str]:
     return figs
 
 
-def render_html(c: ReportContent, figures: dict[str, str]) -> str:
+def render_html(c: Any, figures: dict[str, str]) -> str:
     """The complete page."""
+    if getattr(c, "kind", "binary") == "general":
+        from ._general_html import general_sections
+
+        body = general_sections(c, figures)
+    else:
+        body = (_calibration_section(c, figures) + _decision_section(c, figures)
+                + _prevalence_section(c, figures))
     return (
         '<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">'
         '<meta name="viewport" content="width=device-width, initial-scale=1">'
@@ -349,9 +366,7 @@ def render_html(c: ReportContent, figures: dict[str, str]) -> str:
         '<a href="#decisions">Decisions</a><a href="#prevalence">Prevalence</a>'
         '<a href="#cautions">Cautions</a></nav><main>'
         + _glance(c)
-        + _calibration_section(c, figures)
-        + _decision_section(c, figures)
-        + _prevalence_section(c, figures)
+        + body
         + _cautions_section()
         + "</main><footer>Written by probwrap. Self-contained: no scripts, no external "
         "files.</footer></body></html>"

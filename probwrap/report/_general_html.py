@@ -1,0 +1,234 @@
+"""HTML sections and figures of the multiclass / multi-action report."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from ._general import MulticlassReportContent
+from ._html import _figure, _num, _share, _text, figure_to_svg
+
+__all__ = ["general_figures", "general_sections", "general_glance"]
+
+
+def general_figures(c: MulticlassReportContent) -> dict[str, str]:
+    """Top-label reliability diagram, action shares per rule, class shares (when estimated)."""
+    from ..plot import ActionShareDisplay, ClassPriorDisplay, ReliabilityDiagram
+
+    figs: dict[str, str] = {}
+    rel = ReliabilityDiagram.from_predictions(
+        c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
+        confidence_level=c.confidence_level,
+    )
+    figs["reliability"] = figure_to_svg(rel.figure_, "rel")
+    if c.rules:
+        disp = ActionShareDisplay(
+            shares=np.vstack([r.shares for r in c.rules]),
+            mean_cost=[r.mean_cost for r in c.rules], rule_names=[r.label for r in c.rules],
+            action_names=c.action_names, capacity=c.capacity,
+        ).plot()
+        figs["actions"] = figure_to_svg(disp.figure_, "act")
+    if c.target_prior is not None:
+        disp = ClassPriorDisplay(
+            source_prior=c.source_prior, target_prior=c.target_prior,
+            interval=c.target_interval, class_names=c.class_names,
+            shift_pvalue=c.shift_pvalue,
+        ).plot()
+        figs["class_prior"] = figure_to_svg(disp.figure_, "cprior")
+    return figs
+
+
+def _calibration(c: MulticlassReportContent, figures: dict[str, str]) -> str:
+    level = f"{c.confidence_level:.0%}"
+    rows = "".join(
+        f'<tr data-metric="{m.key}"><td>{_text(m.label)}</td>{_num(m.value)}{_num(m.low)}'
+        f"{_num(m.high)}<td>{_text(m.ideal)}</td></tr>"
+        for m in c.metrics
+    )
+    shares = "".join(
+        f'<tr data-item="class:{j}"><td>{_text(name)}</td>{_share(c.class_shares[j])}</tr>'
+        for j, name in enumerate(c.class_names)
+    )
+    parts = [
+        '<section id="calibration"><h2><span class="pw-num">1</span>Calibration</h2>',
+        f"<p>Measured on {c.n_rows} labelled rows of {c.n_classes} classes. Intervals are "
+        f"{level} bootstrap percentile intervals (rows resampled with replacement).</p>",
+        '<table id="class-shares"><thead><tr><th>class</th><th>share of labelled rows</th>'
+        f"</tr></thead><tbody>{shares}</tbody></table>",
+        '<table id="calibration-metrics"><thead><tr><th>metric</th><th>value</th>'
+        f"<th>{level} low</th><th>{level} high</th><th>ideal</th></tr></thead>"
+        f"<tbody>{rows}</tbody></table>",
+        '<p class="pw-note">The top-label error bins each row by its largest probability and '
+        "compares it with how often that class occurred (Guo et al. 2017); the classwise error "
+        "averages the one-vs-rest binned error of every class (Kull et al. 2019). Binned errors "
+        "are biased upwards in small samples and in resamples, so an interval can lie above "
+        "the value itself.</p>",
+    ]
+    if c.calibration_method is not None:
+        parts.append(f"<p>Calibration map in use: <b>{_text(c.calibration_method)}</b>.</p>")
+    parts.append(_figure(
+        "fig-reliability", figures["reliability"],
+        f"Top-label reliability diagram: accuracy of the most probable class against its mean "
+        f"probability in {c.n_bins} equal-width bins, with {level} Wilson (1927) intervals; "
+        "rows per bin below.",
+    ))
+    parts.append("</section>")
+    return "".join(parts)
+
+
+def _decisions(c: MulticlassReportContent, figures: dict[str, str]) -> str:
+    parts = ['<section id="decisions"><h2><span class="pw-num">2</span>Decisions</h2>']
+    if c.cost_matrix is None:
+        parts.append(
+            "<p>No costs were given, so no decision rule was chosen. Cost and decision curves "
+            "are defined for two classes and two actions only.</p></section>"
+        )
+        return "".join(parts)
+    m = c.cost_matrix
+    head = "".join(f"<th>{_text(a)}</th>" for a in c.action_names)
+    body = "".join(
+        f'<tr data-item="cost:{i}"><td>{_text(name)}</td>'
+        + "".join(_num(v, 2) for v in m[i]) + "</tr>"
+        for i, name in enumerate(c.class_names)
+    )
+    what = ("Mean cost matrix over the labelled rows (each row has its own matrix)"
+            if c.per_row_costs else "Cost matrix")
+    parts.append(
+        f"<p>{what}: rows are the true class, columns the actions; negative entries are "
+        "gains.</p>"
+        f'<table id="cost-matrix"><thead><tr><th>true class</th>{head}</tr></thead>'
+        f"<tbody>{body}</tbody></table>"
+    )
+    cap = "no capacity limit"
+    if c.capacity is not None:
+        j, share = c.capacity
+        cap = (f"at most <span id=\"capacity\" data-value=\"{share!r}\">{100 * share:.1f}%"
+               f"</span> of rows may receive &ldquo;{_text(c.action_names[j])}&rdquo;")
+    parts.append(f'<p id="chosen-rule">Rule in use: {_text(c.rule_source)}; {cap}.')
+    if c.budget_threshold is not None:
+        parts.append(
+            " Within the capacity a row takes the limited action only when that saves at least "
+            f'<span id="budget-threshold" data-value="{c.budget_threshold!r}">'
+            f"{c.budget_threshold:.4f}</span> in expected cost against its next best action."
+        )
+    parts.append("</p>")
+    if c.class_offsets is not None and np.any(c.class_offsets != 0):
+        cells = "".join(
+            f'<tr data-item="offset:{i}"><td>{_text(name)}</td>{_num(c.class_offsets[i])}</tr>'
+            for i, name in enumerate(c.class_names)
+        )
+        parts.append(
+            "<p>Tuned class offsets, added to the log-probabilities before the expected costs "
+            "are compared:</p>"
+            '<table id="class-offsets"><thead><tr><th>class</th><th>offset</th></tr></thead>'
+            f"<tbody>{cells}</tbody></table>"
+        )
+    target = any(r.target_expected_cost is not None for r in c.rules)
+    share_head = "".join(f"<th>share {_text(a)}</th>" for a in c.action_names)
+    head = (
+        f"<tr><th>rule</th><th>mean cost per row</th>{share_head}"
+        + ("<th>within capacity</th>" if c.capacity is not None else "")
+        + ("<th>expected cost (unlabelled)</th>" if target else "")
+        + "</tr>"
+    )
+    rows = []
+    for r in c.rules:
+        cls = ' class="pw-chosen"' if r.key == "chosen" else ""
+        cells = [f"<td>{_text(r.label)}</td>", _num(r.mean_cost)]
+        cells += [_share(s) for s in r.shares]
+        if c.capacity is not None:
+            cells.append(f"<td>{'yes' if r.within_capacity else 'no'}</td>")
+        if target:
+            cells.append(_num(r.target_expected_cost))
+        rows.append(f'<tr data-rule="{r.key}"{cls}>{"".join(cells)}</tr>')
+    parts.append(f'<table id="rule-comparison"><thead>{head}</thead><tbody>{"".join(rows)}'
+                 "</tbody></table>")
+    if target:
+        tshare = "".join(f"<th>share {_text(a)}</th>" for a in c.action_names)
+        trows = "".join(
+            f'<tr data-rule="target:{r.key}"><td>{_text(r.label)}</td>'
+            + "".join(_share(s) for s in r.target_shares) + "</tr>"
+            for r in c.rules if r.target_shares is not None
+        )
+        parts.append(
+            "<p>The same rules on the unlabelled rows:</p>"
+            f'<table id="rule-comparison-unlabelled"><thead><tr><th>rule</th>{tshare}</tr>'
+            f"</thead><tbody>{trows}</tbody></table>"
+        )
+    parts.append(
+        '<p class="pw-note">Mean cost per row is the realised cost on the labelled rows of '
+        "this report. A rule tuned on these same rows is optimistic there; prefer held-out or "
+        "later rows for the comparison."
+        + (" The unlabelled column uses the posteriors re-weighted to the estimated new class "
+           "shares (expected, not realised, cost)." if target else "")
+        + "</p>"
+    )
+    parts.append(_figure(
+        "fig-actions", figures["actions"],
+        "Share of labelled rows given each action under each rule, with the rule's mean cost "
+        "per row at the right" + (" and the capacity marked." if c.capacity else "."),
+    ))
+    parts.append("</section>")
+    return "".join(parts)
+
+
+def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
+    parts = ['<section id="prevalence"><h2><span class="pw-num">3</span>Class shares</h2>']
+    if c.target_prior is None:
+        parts.append(
+            "<p>No unlabelled rows were given, so the class shares of the deployment data were "
+            "not estimated.</p></section>"
+        )
+        return "".join(parts)
+    level = f"{c.confidence_level:.0%}"
+    iv = c.target_interval
+    rows = "".join(
+        f'<tr data-item="prior:{j}"><td>{_text(name)}</td>{_num(c.source_prior[j])}'
+        f"{_num(c.target_prior[j])}"
+        + (f"{_num(iv[j, 0])}{_num(iv[j, 1])}" if iv is not None else "")
+        + "</tr>"
+        for j, name in enumerate(c.class_names)
+    )
+    parts.append(
+        '<table id="prevalence-summary"><thead><tr><th>class</th><th>source share</th>'
+        f"<th>estimated target share ({_text(c.prior_method)})</th>"
+        + (f"<th>{level} low</th><th>{level} high</th>" if iv is not None else "")
+        + f"</tr></thead><tbody>{rows}"
+        f'<tr data-item="shift_statistic"><td>shift test statistic (likelihood ratio, '
+        f"chi-square {c.n_classes - 1} df)</td>{_num(c.shift_statistic)}</tr>"
+        f'<tr data-item="shift_pvalue"><td>shift test p-value</td>'
+        f'<td data-value="{c.shift_pvalue!r}">{c.shift_pvalue:.3g}</td></tr></tbody></table>'
+    )
+    verdict = (
+        "The test rejects &ldquo;no shift&rdquo; at the 1% level: the class shares have moved."
+        if c.shift_pvalue < 0.01 else
+        "The test does not reject &ldquo;no shift&rdquo; at the 1% level."
+    )
+    parts.append(
+        f"<p>Estimated from {c.n_unlabelled or 'the'} unlabelled rows, assuming only the class "
+        f"shares changed (prior shift). {verdict}</p>"
+    )
+    parts.append(_figure(
+        "fig-class-prior", figures["class_prior"],
+        f"Share of each class in the labelled rows and estimated in the unlabelled rows, with "
+        f"{level} intervals.",
+    ))
+    parts.append("</section>")
+    return "".join(parts)
+
+
+def general_sections(c: MulticlassReportContent, figures: dict[str, str]) -> str:
+    """Calibration, decisions and class-share sections (the caller adds the cautions)."""
+    return _calibration(c, figures) + _decisions(c, figures) + _prevalence(c, figures)
+
+
+def general_glance(c: MulticlassReportContent) -> list[tuple[str, Any]]:
+    items: list[tuple[str, Any]] = [("labelled rows", f"{c.n_rows}"),
+                                    ("classes", f"{c.n_classes}")]
+    if c.rules:
+        items.append(("actions", f"{len(c.action_names)}"))
+        items.append(("mean cost of the rule in use", f"{c.rules[0].mean_cost:.4f}"))
+    if c.shift_pvalue is not None:
+        items.append(("shift test p-value", f"{c.shift_pvalue:.3g}"))
+    return items
