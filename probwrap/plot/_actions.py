@@ -85,7 +85,7 @@ class ActionShareDisplay:
     def plot(self, ax: Any = None) -> ActionShareDisplay:
         """Draw the bars (on ``ax``, or a new figure)."""
         n_rules = len(self.rule_names)
-        ax = new_axes(ax, figsize=(6.4, 0.55 * n_rules + 1.5))
+        ax = new_axes(ax, figsize=(7.4, 0.5 * n_rules + 1.6))
         style_axes(ax)
         ax.grid(False)
         ypos = np.arange(n_rules)[::-1]
@@ -98,22 +98,24 @@ class ActionShareDisplay:
             self.segments_.append(bars)
             left = left + self.shares[:, j]
         self.cost_labels_ = [
-            ax.text(1.02, y, f"{c:.3f}", va="center", ha="left", fontsize=8,
+            ax.text(1.045, y, f"{c:.3f}", va="center", ha="left", fontsize=8,
                     color=PALETTE["ink"])
             for y, c in zip(ypos, self.mean_cost, strict=True)
         ]
         if self.capacity is not None:
             j, share = int(self.capacity[0]), float(self.capacity[1])
-            before = self.shares[:, :j].sum(axis=1)
-            ax.scatter(before + share, ypos, marker="|", s=220, color=PALETTE["ink"],
+            # the limit as a tick inside the bar: where the limited segment would have to end
+            at = self.shares[:, :j].sum(axis=1) + share
+            inside = at <= 1.0 + 1e-12
+            ax.scatter(at[inside], ypos[inside], marker="|", s=160, color=PALETTE["ink"],
                        label=f"capacity of {self.action_names[j]}", zorder=3)
         ax.set_yticks(ypos, self.rule_names, fontsize=8)
-        ax.set_xlim(0, 1.16)
+        ax.set_xlim(0, 1.2)
         ax.set_xticks([0, 0.25, 0.5, 0.75, 1.0])
         ax.set_xlabel("share of rows (mean cost per row at the right)")
         ax.set_title("Actions taken by each rule", fontsize=9)
-        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.28 if n_rules < 4 else -0.16),
-                  ncol=min(len(self.action_names) + 1, 5), fontsize=7, frameon=False)
+        ax.figure.legend(*ax.get_legend_handles_labels(), loc="outside lower center",
+                         ncol=min(len(self.action_names) + 1, 5), fontsize=7, frameon=False)
         self.ax_ = ax
         self.figure_ = ax.figure
         return self

@@ -126,8 +126,9 @@ def write_report(
         their weighted mean. A :class:`~probwrap.CostPolicyWrapper` with costs given as a
         function of ``X`` supplies them itself.
     class_names : sequence of str, optional
-        General form with ``y_true``/``y_prob``: the class of each column of ``y_prob``
-        (default: the sorted distinct labels of ``y_true``).
+        General form: display names of the classes, one per column of the probabilities
+        (default: the class labels). With ``y_true``/``y_prob``, labels are column indices
+        ``0..k-1`` or any labels whose sorted distinct values match the columns.
 
     Returns
     -------

@@ -440,22 +440,16 @@ def _general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_co
         if y_arr.shape[0] != proba.shape[0]:
             raise ValueError(f"`y_true` has {y_arr.shape[0]} rows but `y_prob` has "
                              f"{proba.shape[0]}; they must match.")
-        if class_names is not None:
-            classes = np.asarray(class_names)
-            if classes.shape != (k,):
-                raise ValueError(f"`class_names` must name the class of each of the {k} "
-                                 f"columns of `y_prob`; got {len(classes)}.")
+        found = np.unique(y_arr)
+        if y_arr.dtype.kind in "iu" and found.min() >= 0 and found.max() < k:
+            classes = np.arange(k)
+        elif found.shape[0] == k:
+            classes = found
         else:
-            found = np.unique(y_arr)
-            if found.shape[0] == k:
-                classes = found
-            elif y_arr.dtype.kind in "iu" and found.min() >= 0 and found.max() < k:
-                classes = np.arange(k)
-            else:
-                raise ValueError(
-                    f"`y_true` holds {found.shape[0]} distinct labels but `y_prob` has {k} "
-                    "columns; pass `class_names` (the class of each column)."
-                )
+            raise ValueError(
+                f"`y_true` holds {found.shape[0]} distinct labels but `y_prob` has {k} columns; "
+                f"give labels as column indices 0..{k - 1}, or every class at least once."
+            )
         y_index = _class_index(y_arr, classes, "y_true")
     if batch_size is not None:
         raise ValueError("`batch_size` (prevalence by batch) is available for binary reports "
@@ -464,6 +458,9 @@ def _general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_co
     if q is not None and q.shape[1] != proba.shape[1]:
         raise ValueError(f"`unlabelled_prob` has {q.shape[1]} columns but the labelled "
                          f"probabilities have {proba.shape[1]}.")
+    if class_names is not None and len(class_names) != proba.shape[1]:
+        raise ValueError(f"`class_names` must name the {proba.shape[1]} classes (columns of the "
+                         f"probabilities); got {len(class_names)}.")
     names = tuple(str(c) for c in (class_names if class_names is not None else classes))
     return collect_general_content(
         y_index=y_index, proba=proba, class_names=names, sample_weight=sample_weight,

@@ -106,7 +106,9 @@ def _decisions(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         cap = (f"at most <span id=\"capacity\" data-value=\"{share!r}\">{100 * share:.1f}%"
                f"</span> of rows may receive &ldquo;{_text(c.action_names[j])}&rdquo;")
     parts.append(f'<p id="chosen-rule">Rule in use: {_text(c.rule_source)}; {cap}.')
-    if c.budget_threshold is not None:
+    if c.budget_threshold is not None and c.budget_threshold <= 0:
+        parts.append(" The capacity does not bind: the least-cost actions already stay within it.")
+    elif c.budget_threshold is not None:
         parts.append(
             " Within the capacity a row takes the limited action only when that saves at least "
             f'<span id="budget-threshold" data-value="{c.budget_threshold!r}">'
