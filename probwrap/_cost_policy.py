@@ -303,9 +303,13 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             self._fit_cutoff(ho, proba, matrix, budget_share)
         else:
             self._fit_offsets(ho, proba, matrix, row_costs, k, budget_index, budget_share)
-        if ho is not None and ho.from_tally:
-            # Tally rows (Dask input): their weights are row counts, not rows to resample.
-            self._interval_inputs = None
+        if ho is not None and ho.from_tally and self._interval_inputs is not None:
+            # Tally rows (Dask input): their weights are row counts, not rows to resample; the
+            # interval comes from the tally's Poisson-bootstrap replicates instead.
+            tally = self.tally_
+            self._interval_inputs = (
+                ("tally", tally, matrix, budget_share) if tally.n_replicates else None
+            )
         if ho is not None:
             chosen = self._decide(proba, matrix if row_costs is None else row_costs)
             realised = (
@@ -462,6 +466,13 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         check_is_fitted(self, "actions_")
         if self._interval_inputs is None:
             return None
+        if self._interval_cache is None and isinstance(self._interval_inputs[0], str):
+            from .scale._bootstrap import tally_cutoff_interval
+
+            _, tally, matrix, share = self._interval_inputs
+            self._interval_cache = tally_cutoff_interval(
+                tally, matrix, capacity=share, confidence_level=self.confidence_level
+            )
         if self._interval_cache is None:
             p, y, matrix, w, fold, share = self._interval_inputs
             self._interval_cache = cutoff_interval(
@@ -470,6 +481,11 @@ class CostPolicyWrapper(HeldOutClassifierBase):
                 confidence_level=self.confidence_level, random_state=self.random_state,
             )
         return self._interval_cache
+
+    def _dask_replicates(self) -> int:
+        """Bootstrap replicates to tally on Dask input (for ``cutoff_interval_``)."""
+        tuned = self.strategy == "tuned" and self.costs is not None and not callable(self.costs)
+        return int(self.n_resamples) if tuned else 0
 
     def __sklearn_tags__(self):
         tags = super().__sklearn_tags__()

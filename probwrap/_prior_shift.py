@@ -209,10 +209,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             random_state=self.random_state,
         )
         est.fit(ho.values, ho.y_index, ho.sample_weight)
-        if ho.from_tally:
-            # Tally rows (Dask input): bootstrapping them would not resample the original rows,
-            # so adapt gives point estimates only (target_prior_interval_ is None).
-            est.n_resamples = 0
+        self._source_tally = self.tally_ if ho.from_tally else None
         self.prior_estimator_ = est
         self.source_prior_ = est.source_prior_
         self.confusion_matrix_ = est.confusion_
@@ -222,6 +219,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             if hasattr(self, name):
                 delattr(self, name)
         return self
+
+    def _dask_replicates(self) -> int:
+        """Bootstrap replicates to tally on Dask input (for ``target_prior_interval_``)."""
+        return int(self.n_resamples)
 
     # -- adaptation ------------------------------------------------------------------------------
     def _check_features(self, X: Any, what: str) -> None:
@@ -254,23 +255,43 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self._check_features(X, "passed to adapt")
         est = self.prior_estimator_
         rs = self.random_state
+        source = getattr(self, "_source_tally", None)
+        target = None
         if _is_dask(X) or _is_dask(sample_weight):
             # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is
-            # estimated from the tally's weighted rows (a point estimate, no bootstrap).
-            import copy
-
+            # estimated from the tally's weighted rows. Bootstrapping tally rows would not
+            # resample the original rows, so the interval comes from Poisson replicates tallied
+            # alongside.
             from .scale._dask import unlabelled_proba_from_dask
 
-            proba, sample_weight, _ = unlabelled_proba_from_dask(
-                self.estimator_, X, sample_weight
+            proba, sample_weight, target = unlabelled_proba_from_dask(
+                self.estimator_, X, sample_weight, n_replicates=est.n_resamples,
+                random_state=rs,
             )
-            est = copy.copy(est)
-            est.n_resamples = 0
         else:
             proba = self._inner_output(X, "predict_proba")
-        res = est.estimate(proba, sample_weight, random_state=rs)
+        poisson = est.n_resamples > 0 and (source is not None or target is not None)
+        if poisson:
+            # Some rows are tallied: one Poisson bootstrap over tallied and in-memory rows alike.
+            import copy
+
+            from ._validation import check_sample_weight
+            from .scale._bootstrap import tally_prior_interval
+            from .scale._tally import replicate_seed
+
+            point_est = copy.copy(est)
+            point_est.n_resamples = 0
+            res = point_est.estimate(proba, sample_weight, random_state=rs)
+            w = check_sample_weight(sample_weight, np.asarray(proba).shape[0])
+            interval = tally_prior_interval(
+                est, source, np.asarray(proba, dtype=float), w, target, res.prior,
+                n_replicates=est.n_resamples, seed=replicate_seed(rs),
+            )
+        else:
+            res = est.estimate(proba, sample_weight, random_state=rs)
+            interval = res.interval
         self.target_prior_ = res.prior
-        self.target_prior_interval_ = res.interval
+        self.target_prior_interval_ = interval
         self.shift_pvalue_ = res.shift_pvalue
         self.shift_statistic_ = res.shift_statistic
         if self.known_prior_ is not None:

@@ -130,7 +130,9 @@ def test_tuned_cutoff_on_dask_within_a_tenth_of_a_percent(client, model):
 
     assert cost(remote.cutoff_) == pytest.approx(cost(local.cutoff_), rel=1e-3)
     assert remote.heldout_cost_ == pytest.approx(local.heldout_cost_, rel=1e-3)
-    assert remote.cutoff_interval_ is None
+    # a Poisson-bootstrap interval from replicate tallies (checked in test_scale_bootstrap.py)
+    ci = remote.cutoff_interval_
+    assert ci.low <= remote.cutoff_ <= ci.high and ci.bootstrap_cutoffs.shape == (200,)
     actions = remote.predict(Xd)
     assert isinstance(actions, da.Array)
     np.testing.assert_array_equal(actions.compute(), remote.predict(X))

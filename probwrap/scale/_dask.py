@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 
-from ._tally import DEFAULT_RESOLUTION, ScoreTally, _tally_block
+from ._tally import DEFAULT_RESOLUTION, ScoreTally, _tally_block, replicate_seed
 
 __all__ = ["is_dask_collection", "tally_dask_scores", "heldout_from_dask", "dask_predict"]
 
@@ -98,7 +98,13 @@ def _tree_merge(dask: Any, parts: list) -> Any:
 
 
 def tally_dask_scores(
-    scores: Any, y: Any, sample_weight: Any, n_labels: int, resolution: float
+    scores: Any,
+    y: Any,
+    sample_weight: Any,
+    n_labels: int,
+    resolution: float,
+    n_replicates: int = 0,
+    seed: int = 0,
 ) -> ScoreTally:
     """Tally of Dask (or mixed Dask / NumPy) scores, labels and weights, block by block."""
     dask, da = _import_dask()
@@ -110,7 +116,10 @@ def tally_dask_scores(
     ys = _aligned_blocks(y, "y", scores, blocks, lengths)
     ws = _aligned_blocks(sample_weight, "sample_weight", scores, blocks, lengths)
     block = dask.delayed(_tally_block, pure=True)
-    parts = [block(b, yb, wb, n_labels, resolution) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
+    parts = [
+        block(b, yb, wb, n_labels, resolution, n_replicates, [seed, 0, i])
+        for i, (b, yb, wb) in enumerate(zip(blocks, ys, ws, strict=True))
+    ]
     tally = _tree_merge(dask, parts).compute()
     if tally.n_rows == 0:
         raise ValueError("`scores` is empty; a tally needs at least one row.")
@@ -134,7 +143,9 @@ def _binary_scores(values: np.ndarray, response: str) -> np.ndarray:
     return lp[:, 1] - lp[:, 0]
 
 
-def _block_tally(estimator, response, classes, resolution, Xb, yb, wb) -> ScoreTally:
+def _block_tally(
+    estimator, response, classes, resolution, Xb, yb, wb, n_replicates=0, seed=None
+) -> ScoreTally:
     s = _binary_scores(getattr(estimator, response)(Xb), response)
     y_index = None
     if yb is not None:
@@ -148,7 +159,9 @@ def _block_tally(estimator, response, classes, resolution, Xb, yb, wb) -> ScoreT
                 f"does not know; its classes are {classes.tolist()}."
             )
         y_index = pos
-    return _tally_block(s, y_index, wb, 2 if yb is not None else 1, resolution)
+    return _tally_block(
+        s, y_index, wb, 2 if yb is not None else 1, resolution, n_replicates, seed
+    )
 
 
 def dask_tally_of_model(
@@ -159,8 +172,14 @@ def dask_tally_of_model(
     sample_weight: Any = None,
     *,
     resolution: float = DEFAULT_RESOLUTION,
+    n_replicates: int = 0,
+    seed: int = 0,
+    stream: int = 0,
 ) -> ScoreTally:
-    """Tally of a fitted binary model's log-odds on Dask rows, computed on the cluster."""
+    """Tally of a fitted binary model's log-odds on Dask rows, computed on the cluster.
+
+    Block ``i`` draws its bootstrap replicates from ``default_rng([seed, stream, i])``.
+    """
     dask, _ = _import_dask()
     classes = np.asarray(estimator.classes_)
     order = np.argsort(classes)
@@ -171,8 +190,8 @@ def dask_tally_of_model(
     ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
     block = dask.delayed(_block_tally, pure=True)
     parts = [
-        block(estimator, response, classes, resolution, b, yb, wb)
-        for b, yb, wb in zip(blocks, ys, ws, strict=True)
+        block(estimator, response, classes, resolution, b, yb, wb, n_replicates, [seed, stream, i])
+        for i, (b, yb, wb) in enumerate(zip(blocks, ys, ws, strict=True))
     ]
     return _tree_merge(dask, parts).compute()
 
@@ -203,7 +222,13 @@ def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: 
             f"{classes.shape[0]} classes. Tally each class's one-vs-rest scores with "
             "probwrap.scale.tally_scores instead."
         )
-    tally = dask_tally_of_model(estimator, response, X, y, sample_weight)
+    # Wrappers that report bootstrap intervals ask for Poisson replicates (``_dask_replicates``),
+    # drawn per block from a generator seeded by their random_state and the block index.
+    n_rep = int(owner._dask_replicates()) if hasattr(owner, "_dask_replicates") else 0
+    seed = replicate_seed(getattr(owner, "random_state", None)) if n_rep else 0
+    tally = dask_tally_of_model(
+        estimator, response, X, y, sample_weight, n_replicates=n_rep, seed=seed, stream=0
+    )
     if tally.total_weight <= 0:
         raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
     weighted = np.flatnonzero(tally.label_weight > 0)
@@ -236,15 +261,30 @@ def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: 
     )
 
 
-def unlabelled_proba_from_dask(estimator: Any, X: Any, sample_weight: Any = None):
-    """Binary posteriors of unlabelled Dask rows as tally rows: ``(proba (m, 2), weights, tally)``."""
+def unlabelled_proba_from_dask(
+    estimator: Any,
+    X: Any,
+    sample_weight: Any = None,
+    *,
+    n_replicates: int = 0,
+    random_state: Any = None,
+):
+    """Binary posteriors of unlabelled Dask rows as tally rows: ``(proba (m, 2), weights, tally)``.
+
+    Replicates (if any) use stream 1 of the seed, so they are independent of the labelled
+    tally's (stream 0) for the same ``random_state``.
+    """
     classes = np.asarray(estimator.classes_)
     if classes.shape[0] != 2:
         raise ValueError(
             f"Dask input is supported for binary classifiers; the estimator has "
             f"{classes.shape[0]} classes."
         )
-    tally = dask_tally_of_model(estimator, "predict_proba", X, None, sample_weight)
+    seed = replicate_seed(random_state) if n_replicates else 0
+    tally = dask_tally_of_model(
+        estimator, "predict_proba", X, None, sample_weight, n_replicates=n_replicates,
+        seed=seed, stream=1,
+    )
     if tally.total_weight <= 0:
         raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
     proba, w = tally.to_scores(proba=True)

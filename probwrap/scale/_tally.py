@@ -46,6 +46,28 @@ def _check_resolution(resolution: Any) -> float:
     return float(resolution)
 
 
+def _check_n_replicates(n_replicates: Any) -> int:
+    if (
+        isinstance(n_replicates, bool)
+        or not isinstance(n_replicates, numbers.Integral)
+        or n_replicates < 0
+    ):
+        raise ValueError(
+            f"`n_replicates` must be a non-negative integer; got {n_replicates!r}."
+        )
+    return int(n_replicates)
+
+
+def replicate_seed(random_state: Any) -> int:
+    """One integer seed from a ``random_state`` (int, RandomState or None), for block seeding.
+
+    The replicate draws of block ``i`` come from ``numpy.random.default_rng([seed, stream, i])``.
+    """
+    from sklearn.utils import check_random_state
+
+    return int(check_random_state(random_state).randint(2**31 - 1))
+
+
 def _check_n_labels(n_labels: Any) -> int:
     if (
         isinstance(n_labels, bool)
@@ -78,6 +100,11 @@ class ScoreTally:
     labelled : bool
         Whether the columns of ``counts`` are labels (False: a single column of weights of
         unlabelled rows).
+    replicates : ndarray of shape (n_replicates, m, n_labels), default=None
+        Poisson-bootstrap replicate counts aligned with ``bins``: replicate ``b`` counts every
+        row with its weight times an independent Poisson(1) draw (see :func:`tally_scores`).
+    squared_weight : float, default=None
+        Sum of the squared row weights (for the effective number of rows); None if unknown.
 
     Examples
     --------
@@ -98,6 +125,8 @@ class ScoreTally:
         resolution: float,
         n_rows: int,
         labelled: bool = True,
+        replicates: np.ndarray | None = None,
+        squared_weight: float | None = None,
     ) -> None:
         self.bins = np.asarray(bins, dtype=np.int64)
         self.counts = np.asarray(counts, dtype=float)
@@ -114,6 +143,15 @@ class ScoreTally:
             raise ValueError(
                 f"`score_sums` must have shape {self.bins.shape}; got {self.score_sums.shape}."
             )
+        self.replicates = None if replicates is None else np.asarray(replicates, dtype=float)
+        if self.replicates is not None and (
+            self.replicates.ndim != 3 or self.replicates.shape[1:] != self.counts.shape
+        ):
+            raise ValueError(
+                f"`replicates` must have shape (n_replicates, {self.counts.shape[0]}, "
+                f"{self.counts.shape[1]}); got {self.replicates.shape}."
+            )
+        self.squared_weight = None if squared_weight is None else float(squared_weight)
 
     # -- summaries -------------------------------------------------------------------------
     @property
@@ -140,6 +178,18 @@ class ScoreTally:
     def label_weight(self) -> np.ndarray:
         """Total weight of each label, shape (n_labels,)."""
         return self.counts.sum(axis=0)
+
+    @property
+    def n_replicates(self) -> int:
+        """Number of bootstrap replicate tallies carried along (0 for none)."""
+        return 0 if self.replicates is None else int(self.replicates.shape[0])
+
+    @property
+    def effective_rows(self) -> float:
+        """Effective number of rows ``(sum w)^2 / sum w^2`` (NaN when ``squared_weight`` is unknown)."""
+        if self.squared_weight is None or self.squared_weight <= 0:
+            return float("nan")
+        return self.total_weight**2 / self.squared_weight
 
     @property
     def bin_edges(self) -> np.ndarray:
@@ -183,16 +233,7 @@ class ScoreTally:
             raise ValueError(
                 "This tally holds unlabelled rows; use to_scores() for their scores and weights."
             )
-        counts = self.counts
-        if positive is not None:
-            if not (isinstance(positive, numbers.Integral) and 0 <= positive < self.n_labels):
-                raise ValueError(
-                    f"`positive` must be a label index in 0..{self.n_labels - 1}; got "
-                    f"{positive!r}."
-                )
-            pos = counts[:, positive]
-            counts = np.column_stack([counts.sum(axis=1) - pos, pos])
-            counts[:, 0] = np.maximum(counts[:, 0], 0.0)
+        counts = self._label_counts(self.counts, positive)
         rep = self.bin_scores
         keep = counts > 0
         bin_idx, label = np.nonzero(keep)
@@ -201,6 +242,38 @@ class ScoreTally:
         if proba:
             scores = _two_column_proba(scores)
         return scores, label.astype(int), weights
+
+    def _label_counts(self, counts: np.ndarray, positive: int | None) -> np.ndarray:
+        if positive is None:
+            return counts
+        if not (isinstance(positive, numbers.Integral) and 0 <= positive < self.n_labels):
+            raise ValueError(
+                f"`positive` must be a label index in 0..{self.n_labels - 1}; got {positive!r}."
+            )
+        pos = counts[..., positive]
+        rest = np.maximum(counts.sum(axis=-1) - pos, 0.0)
+        return np.stack([rest, pos], axis=-1)
+
+    def replicate_row_weights(self, positive: int | None = None) -> np.ndarray:
+        """Bootstrap replicate weights of the rows of :meth:`to_rows`, shape (n_replicates, r).
+
+        Row ``j`` of ``to_rows(positive)`` has weight ``out[b, j]`` in replicate ``b``: the
+        tallied weight of its (bin, label) with every original row's weight multiplied by that
+        row's Poisson(1) draw of replicate ``b``. Fitting on ``to_rows()`` with these weights is
+        fitting on a Poisson bootstrap resample of the original rows.
+        """
+        if self.replicates is None:
+            raise ValueError("This tally carries no bootstrap replicates (n_replicates=0).")
+        counts = self._label_counts(self.counts, positive)
+        bin_idx, label = np.nonzero(counts > 0)
+        reps = self._label_counts(self.replicates, positive)
+        return reps[:, bin_idx, label]
+
+    def replicate_bin_weights(self) -> np.ndarray:
+        """Bootstrap replicate weights of the rows of :meth:`to_scores`, shape (n_replicates, m)."""
+        if self.replicates is None:
+            raise ValueError("This tally carries no bootstrap replicates (n_replicates=0).")
+        return self.replicates.sum(axis=2)
 
     def to_scores(self, *, proba: bool = False) -> tuple[np.ndarray, np.ndarray]:
         """One weighted row per bin, whatever the labels: ``(scores, weights)``.
@@ -236,8 +309,24 @@ class ScoreTally:
         sums = np.bincount(
             inv, weights=np.concatenate([self.score_sums, other.score_sums]), minlength=m
         )
+        if self.n_replicates != other.n_replicates:
+            raise ValueError(
+                f"Tallies with different numbers of bootstrap replicates cannot be merged "
+                f"({self.n_replicates} and {other.n_replicates})."
+            )
+        reps = None
+        if self.replicates is not None:
+            reps = np.zeros((self.n_replicates, m, self.n_labels))
+            reps[:, inv[: self.n_bins]] += self.replicates  # bins of one tally are distinct
+            reps[:, inv[self.n_bins :]] += other.replicates
+        sq = (
+            None
+            if self.squared_weight is None or other.squared_weight is None
+            else self.squared_weight + other.squared_weight
+        )
         return ScoreTally(
-            uniq, merged, sums, self.resolution, self.n_rows + other.n_rows, self.labelled
+            uniq, merged, sums, self.resolution, self.n_rows + other.n_rows, self.labelled,
+            reps, sq,
         )
 
     __add__ = merge
@@ -260,14 +349,24 @@ def _tally_block(
     sample_weight: Any,
     n_labels: int,
     resolution: float,
+    n_replicates: int = 0,
+    seed: Any = None,
 ) -> ScoreTally:
-    """Tally of one in-memory block (validated)."""
+    """Tally of one in-memory block (validated).
+
+    With ``n_replicates > 0`` it also holds Poisson-bootstrap replicate counts; the Poisson(1)
+    draws of the block's rows come from ``numpy.random.default_rng(seed)``, so they depend only
+    on ``seed`` (the caller puts the block index into it), not on where the block is tallied.
+    """
     s = check_scores(scores, name="scores")
     n = s.shape[0]
+    cols_out = n_labels if y is not None else 1
     if n == 0:
         return ScoreTally(
-            np.empty(0, np.int64), np.empty((0, n_labels)), np.empty(0), resolution, 0,
+            np.empty(0, np.int64), np.empty((0, cols_out)), np.empty(0), resolution, 0,
             y is not None,
+            np.empty((n_replicates, 0, cols_out)) if n_replicates else None,
+            0.0,
         )
     if y is not None:
         y_arr = np.asarray(y)
@@ -320,7 +419,18 @@ def _tally_block(
     sums = np.bincount(idx, weights=w * s, minlength=m)
     occupied = counts.sum(axis=1) > 0
     bins = (np.arange(lo, hi + 1, dtype=np.int64) if uniq is None else uniq)[occupied]
-    return ScoreTally(bins, counts[occupied], sums[occupied], resolution, n, y is not None)
+    reps = None
+    if n_replicates:
+        rng = np.random.default_rng(seed)
+        cell = idx * cols + labels_of
+        reps = np.empty((n_replicates, int(occupied.sum()), cols))
+        for b in range(n_replicates):  # one replicate at a time: memory O(n + m), not O(B n)
+            wb = w * rng.poisson(1.0, size=n)
+            reps[b] = np.bincount(cell, weights=wb, minlength=m * cols).reshape(m, cols)[occupied]
+    return ScoreTally(
+        bins, counts[occupied], sums[occupied], resolution, n, y is not None, reps,
+        float(np.dot(w, w)),
+    )
 
 
 def merge_tallies(tallies: Any) -> ScoreTally:
@@ -356,6 +466,8 @@ def tally_scores(
     n_labels: int | None = None,
     resolution: float = DEFAULT_RESOLUTION,
     chunk_size: int = 1_000_000,
+    n_replicates: int = 0,
+    random_state: Any = None,
 ) -> ScoreTally:
     """Tally scores (and labels) into bins of width ``resolution``, chunk by chunk.
 
@@ -375,6 +487,15 @@ def tally_scores(
     chunk_size : int, default=1_000_000
         Rows per chunk for in-memory input (the memory of the intermediate arrays). Dask input
         is tallied block by block on the cluster and only the per-block tallies travel.
+    n_replicates : int, default=0
+        Also tally this many Poisson-bootstrap replicates (``replicates``, memory
+        ``n_replicates * n_bins * n_labels`` floats, whatever the number of rows): in replicate
+        ``b`` every row counts with its weight times an independent Poisson(1) draw, which
+        approximates resampling the rows with replacement (Hanley & MacGibbon 2006; Chamandy
+        et al. 2012). Fits repeated on the replicates give bootstrap intervals.
+    random_state : int, RandomState or None, default=None
+        Seed of the replicate draws; chunk (or Dask block) ``i`` draws from its own generator
+        seeded by this seed and ``i``, so the result does not depend on scheduling.
 
     Returns
     -------
@@ -399,10 +520,12 @@ def tally_scores(
         raise ValueError(f"`n_labels` must be 1 without `y`; got {n_labels}.")
     if not (isinstance(chunk_size, numbers.Integral) and chunk_size >= 1):
         raise ValueError(f"`chunk_size` must be a positive integer; got {chunk_size!r}.")
+    n_rep = _check_n_replicates(n_replicates)
+    seed = replicate_seed(random_state) if n_rep else 0
     if any(_is_dask(v) for v in (scores, y, sample_weight)):
         from ._dask import tally_dask_scores
 
-        return tally_dask_scores(scores, y, sample_weight, n_labels, r)
+        return tally_dask_scores(scores, y, sample_weight, n_labels, r, n_rep, seed)
     s = check_scores(scores, name="scores")
     n = s.shape[0]
     if n == 0:
@@ -418,6 +541,8 @@ def tally_scores(
             None if w is None else w[i : i + chunk_size],
             n_labels,
             r,
+            n_rep,
+            [seed, 0, i // chunk_size],
         )
         for i in range(0, n, chunk_size)
     ]

@@ -1,0 +1,176 @@
+"""Bootstrap intervals from the Poisson replicates carried by a tally (no rows needed).
+
+Each replicate of a :class:`~probwrap.scale.ScoreTally` is the tally of a Poisson bootstrap
+resample of the original rows (every row counted with its weight times a Poisson(1) draw).
+Repeating a fit on every replicate's weighted tally rows therefore gives the same kind of
+percentile interval as resampling the rows in memory, with memory ``n_replicates * n_bins``.
+"""
+
+from __future__ import annotations
+
+import warnings
+from typing import Any
+
+import numpy as np
+from sklearn.exceptions import ConvergenceWarning
+
+from ._tally import ScoreTally
+
+__all__ = ["tally_cutoff_interval", "tally_prior_interval"]
+
+
+def tally_cutoff_interval(
+    tally: ScoreTally,
+    costs: Any,
+    *,
+    capacity: float | None = None,
+    confidence_level: float = 0.95,
+):
+    """Percentile bootstrap interval of the least-cost probability cutoff, from replicates.
+
+    The cutoff is searched, as by :func:`probwrap.decision.search_cutoff` on the probability
+    scale ``expit(score)``, on the tally's rows with each replicate's weights.
+
+    Parameters
+    ----------
+    tally : ScoreTally
+        A labelled binary tally with ``n_replicates > 0`` (``tally_scores(..., n_replicates=B)``).
+    costs : mapping or array-like of shape (2, 2)
+        As for :func:`~probwrap.decision.search_cutoff`.
+    capacity : float, default=None
+        Largest share of (weighted) rows given the positive action.
+    confidence_level : float, default=0.95
+
+    Returns
+    -------
+    probwrap.decision.CutoffInterval
+        ``fold_cutoffs`` is empty (the rows of a tally have no folds).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.scale import tally_scores
+    >>> from probwrap.scale._bootstrap import tally_cutoff_interval
+    >>> rng = np.random.default_rng(0)
+    >>> s = rng.normal(scale=2.0, size=5000)
+    >>> y = (rng.random(5000) < 1 / (1 + np.exp(-s))).astype(int)
+    >>> t = tally_scores(s, y, n_replicates=100, random_state=0)
+    >>> ci = tally_cutoff_interval(t, {"fp": 1.0, "fn": 3.0})
+    >>> bool(ci.low < 0.25 < ci.high)
+    True
+    """
+    from ..decision import CutoffInterval, search_cutoff
+
+    if tally.n_replicates < 1:
+        raise ValueError("`tally` carries no bootstrap replicates; tally with n_replicates > 0.")
+    if not 0.0 < float(confidence_level) < 1.0:
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+    proba, y, _ = tally.to_rows(proba=True)
+    p = proba[:, 1]
+    reps = tally.replicate_row_weights()
+    found = np.full(reps.shape[0], np.nan)
+    for b in range(reps.shape[0]):
+        wb = reps[b]
+        if wb.sum() <= 0:  # pragma: no cover - needs every Poisson draw to be zero
+            continue
+        found[b] = search_cutoff(
+            p, y, costs, sample_weight=wb, capacity=capacity, score_bounds=(0.0, 1.0)
+        ).cutoff
+    found = found[np.isfinite(found)]
+    alpha = (1.0 - float(confidence_level)) / 2.0
+    low, high = (float(v) for v in np.quantile(found, [alpha, 1.0 - alpha]))
+    return CutoffInterval(
+        low=low,
+        high=high,
+        confidence_level=float(confidence_level),
+        bootstrap_cutoffs=found,
+        fold_cutoffs=np.empty(0),
+        fold_low=low,
+        fold_high=high,
+    )
+
+
+def _row_replicates(w: np.ndarray, n_replicates: int, seed: Any):
+    """Poisson(1) replicate weights of in-memory rows, one replicate per call (memory O(n))."""
+    rng = np.random.default_rng(seed)
+
+    def draw(b: int) -> np.ndarray:
+        return w * rng.poisson(1.0, size=w.shape[0])
+
+    return draw
+
+
+def tally_prior_interval(
+    estimator: Any,
+    source: ScoreTally | None,
+    target_proba: np.ndarray,
+    target_weight: np.ndarray,
+    target: ScoreTally | None,
+    prior: np.ndarray,
+    *,
+    n_replicates: int,
+    seed: int,
+) -> np.ndarray:
+    """Poisson-bootstrap interval of a target prior, with tally replicates where rows are binned.
+
+    ``estimator`` is a fitted :class:`probwrap.shift.PriorEstimator` (fitted on ``source``'s
+    rows when ``source`` is given, on in-memory rows otherwise). ``target_proba`` and
+    ``target_weight`` are the unlabelled rows the point estimate used (``target``'s bins when
+    ``target`` is given). In replicate ``b`` every original row — labelled and unlabelled —
+    counts with its weight times a Poisson(1) draw: from the tallies' replicates for tallied
+    rows, drawn here (from ``default_rng([seed, 2 or 3])``) for in-memory rows. With
+    ``resample_source`` the calibration, source prior and confusion matrices are re-fitted per
+    replicate, as the in-memory bootstrap does. The percentile interval is then widened, as in
+    memory, to contain the Clopper-Pearson interval of the target's effective number of rows.
+    Returns shape (k, 2).
+    """
+    from ..shift import binomial_interval
+
+    sp, sy, sw_rows = estimator._src
+    k = estimator.n_classes_
+    B = int(n_replicates)
+    if source is not None:
+        B = min(B, source.n_replicates)
+        src_reps = source.replicate_row_weights()
+        src_draw = src_reps.__getitem__
+    else:
+        src_draw = _row_replicates(sw_rows, B, [seed, 2])
+    if target is not None:
+        B = min(B, target.n_replicates)
+        tgt_draw = target.replicate_bin_weights().__getitem__
+        n_eff = target.effective_rows
+    else:
+        tgt_draw = _row_replicates(target_weight, B, [seed, 3])
+        n_eff = float(target_weight.sum() ** 2 / np.sum(target_weight**2))
+    if B < 1:
+        raise ValueError("The bootstrap needs replicates (n_replicates > 0).")
+    base = (estimator.source_prior_, estimator.confusion_, estimator.soft_confusion_)
+    p_cal = estimator.calibrate(target_proba)
+    init = prior if estimator.method == "em" and np.all(prior > 0) else None
+    draws = []
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        warnings.simplefilter("ignore", UserWarning)
+        for b in range(B):
+            src, hard, soft = base
+            pt = p_cal
+            ws = src_draw(b)
+            tw = tgt_draw(b)
+            if estimator.resample_source:
+                if np.any(np.bincount(sy, weights=ws, minlength=k) <= 0):
+                    continue  # a class vanished from this replicate: its prior is undefined
+                cal, src, hard, soft = estimator._summarise(sp, sy, ws, estimator.calibrator_)
+                pt = target_proba if cal is None else cal.predict(target_proba)
+            if tw.sum() <= 0:  # pragma: no cover - needs every Poisson draw to be zero
+                continue
+            draws.append(estimator._point(pt, tw, src, hard, soft, init=init).prior)
+    if not draws:
+        return np.column_stack([np.zeros(k), np.ones(k)])
+    alpha = 1.0 - estimator.confidence_level
+    lo, hi = np.quantile(np.asarray(draws), [alpha / 2, 1 - alpha / 2], axis=0)
+    interval = np.column_stack([lo, hi])
+    if np.isfinite(n_eff):
+        cp = binomial_interval(prior, n_eff, estimator.confidence_level)
+        interval[:, 0] = np.minimum(np.minimum(interval[:, 0], cp[:, 0]), prior)
+        interval[:, 1] = np.maximum(np.maximum(interval[:, 1], cp[:, 1]), prior)
+    return interval
