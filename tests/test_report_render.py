@@ -104,3 +104,41 @@ def test_every_figure_is_laid_out(report_path, tmp_path):
         w, h = (int(v) for v in size.split("x"))
         assert w > 200 and h > 150, entry
         assert visibility == "visible" and display != "none", entry
+
+
+@pytest.fixture(scope="module")
+def multiclass_report_path(tmp_path_factory):
+    three = make_parcels(2000, n_outcomes=3, random_state=32)
+    winter = make_parcels(1000, n_outcomes=3, season="winter", random_state=33)
+    src = three.source_prior
+    back = winter.true_proba * (src / winter.prior)  # the summer model's view of winter rows
+    back /= back.sum(axis=1, keepdims=True)
+    path = tmp_path_factory.mktemp("render-mc") / "report.html"
+    write_report(path, y_true=three.target, y_prob=three.true_proba,
+                 costs=[[0, 4, 12], [20, 4, 12], [60, 64, 12]],
+                 action_names=["ship", "repack", "hold"], capacity={"hold": 0.03},
+                 unlabelled_prob=back, class_names=three.target_names, n_resamples=20)
+    return path
+
+
+def test_multiclass_report_renders(multiclass_report_path, tmp_path):
+    page = multiclass_report_path.read_text(encoding="utf-8")
+    assert "<script" not in page
+    probed = tmp_path / "probed.html"
+    probed.write_text(page.replace("</body>", _PROBE + "</body>"), encoding="utf-8")
+    proc = _run(["--enable-logging=stderr", "--v=0", "--dump-dom", probed.as_uri()], tmp_path,
+                "mc")
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    console = [line for line in proc.stderr.splitlines()
+               if "CONSOLE" in line and "probe" not in line]
+    assert console == [], console
+    match = re.search(r'<pre id="probe">([^<]*)</pre>', proc.stdout)
+    assert match, proc.stdout[-1000:]
+    entries = match.group(1).split(";")
+    assert [e.split(":")[0] for e in entries] == ["fig-reliability", "fig-actions",
+                                                  "fig-class-prior"]
+    for entry in entries:
+        fid, size, visibility, display = entry.split(":")
+        w, h = (int(v) for v in size.split("x"))
+        assert w > 200 and h > 150, entry
+        assert visibility == "visible" and display != "none", entry
