@@ -86,8 +86,10 @@ def test_calibrate_apply_writes_what_the_fitted_map_predicts(files, capsys, out_
                          "--scores", root / "winter.csv", "--score-column", "risk",
                          "--out", root / out_name)
     assert code == 0, err
-    written = pd.read_csv(root / out_name) if out_name.endswith("csv") else pd.read_parquet(
-        root / out_name)
+    written = (
+        pd.read_csv(root / out_name, float_precision="round_trip")
+        if out_name.endswith("csv") else pd.read_parquet(root / out_name)
+    )
     assert list(written.columns) == ["risk", "calibrated_probability"]
     expected = fitted.predict(proba_to_log_odds(files["p_winter"]))
     np.testing.assert_array_equal(written["calibrated_probability"].to_numpy(), expected)

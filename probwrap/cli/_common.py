@@ -27,7 +27,8 @@ def read_table(path: str | Path) -> Any:
         if path.suffix.lower() in (".parquet", ".pq"):
             frame = pd.read_parquet(path)
         else:
-            frame = pd.read_csv(path)
+            # round_trip: floats read back exactly as written, in every pandas version
+            frame = pd.read_csv(path, float_precision="round_trip")
     except pd.errors.EmptyDataError:
         raise DataError(f"{path}: the file is empty") from None
     except Exception as exc:  # parsing errors of any kind: report, do not trace back
