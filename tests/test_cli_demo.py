@@ -162,3 +162,35 @@ def test_report_verb_costs_without_separation_is_data_error(score_files, tmp_pat
                              "--cost-fn", "4"))
     assert code == 1
     assert "--cost-fp > --cost-tn" in capsys.readouterr().err
+
+
+def test_demo_three_way_variant(tmp_path, capsys):
+    """Ship / repack / hold with per-parcel costs: the printed numbers are the report's."""
+    import numpy as np
+
+    from probwrap.cli._demo import _three_way_frame, parcel_costs
+
+    out = tmp_path / "three"
+    assert main(["demo", "--variant", "three-way", "--out", str(out), "--n-train", "1500"]) == 0
+    text = capsys.readouterr().out
+    assert "ship / repack (4) / hold (12)" in text and "shift test p-value" in text
+    page = _parse(out / "report.html")
+    assert page.sections == ["calibration", "decisions", "prevalence", "cautions"]
+    assert page.figures == ["fig-reliability", "fig-actions", "fig-class-prior"]
+    # the "hold for every row" line: hold costs 12 whatever happens
+    hold = next(t for t in text.splitlines() if "hold for every row" in t)
+    assert hold.split()[4] == "12.000" and hold.split()[-1] == "100.0%"
+    # the "ship for every row" cost is the mean ship cost of the test parcels' outcomes
+    Xt, yt, _ = _three_way_frame(1000, 1)
+    ship = next(t for t in text.splitlines() if "ship for every row" in t)
+    expected = parcel_costs(Xt)[np.arange(yt.shape[0]), yt, 0].mean()
+    assert float(ship.split()[4]) == pytest.approx(expected, abs=5e-4)
+    winter = {line.split()[0]: line.split() for line in text.splitlines()
+              if line.strip().split(" ")[0] in ("intact", "dented", "broken")}
+    assert float(winter["dented"][2]) > float(winter["dented"][1])  # winter dents more often
+
+
+def test_demo_unknown_variant_exit_2(tmp_path):
+    with pytest.raises(SystemExit) as exc:
+        main(["demo", "--variant", "four-way", "--out", str(tmp_path)])
+    assert exc.value.code == 2

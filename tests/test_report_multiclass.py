@@ -139,9 +139,10 @@ def test_decision_numbers_match_library(three, report):
     assert _val(page.rows["chosen"][3]) <= CAP
     assert np.isclose(_val(page.ids["budget-threshold"]["data-value"]), budget.saving_threshold)
     assert np.isclose(_val(page.ids["capacity"]["data-value"]), CAP)
-    # alternatives: most probable class as the action, and one action for every row
+    # alternatives: best action as if the most probable class were certain, one action for
+    # every row (the actions are not the classes, so "most probable class as action" is absent)
+    assert "argmax" not in page.rows
     arg = P.argmax(axis=1)
-    assert np.isclose(_val(page.rows["argmax"][0]), COSTS3[y, arg].mean())
     assert np.isclose(_val(page.rows["certain"][0]), COSTS3[y, COSTS3[arg].argmin(axis=1)].mean())
     for j in range(3):
         assert np.isclose(_val(page.rows[f"all:{j}"][0]), COSTS3[y, j].mean())
@@ -257,6 +258,22 @@ def test_binary_with_a_reject_action(tmp_path):
     bayes = np.argmin(np.column_stack([1 - p, p]) @ C, axis=1)
     assert np.isclose(rules["chosen"].mean_cost, C[y, bayes].mean())
     np.testing.assert_allclose(rules["chosen"].shares, np.bincount(bayes, minlength=3) / len(y))
+
+
+def test_actions_equal_to_classes(three, tmp_path):
+    """A square matrix without action names: the actions are the classes."""
+    y, P = three["y"], three["P"]
+    costs = np.array([[0.0, 1.0, 1.0], [5.0, 0.0, 1.0], [20.0, 4.0, 0.0]])
+    content = write_report(tmp_path / "sq.html", y_true=y, y_prob=P, costs=costs,
+                           n_resamples=10)
+    assert content.action_names == ("0", "1", "2")
+    rules = {r.key: r for r in content.rules}
+    arg = P.argmax(axis=1)
+    assert np.isclose(rules["argmax"].mean_cost, costs[y, arg].mean())
+    np.testing.assert_allclose(rules["argmax"].shares, np.bincount(arg, minlength=3) / len(y))
+    bayes = np.argmin(P @ costs, axis=1)
+    assert np.isclose(rules["chosen"].mean_cost, costs[y, bayes].mean())
+    assert rules["chosen"].mean_cost <= rules["argmax"].mean_cost + 0.05
 
 
 @pytest.mark.parametrize(

@@ -8,11 +8,14 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["register", "run_demo"]
+__all__ = ["register", "run_demo", "run_three_way_demo", "parcel_costs"]
 
 #: the scenario's costs (currency units): inspection and repacking ~3, a damaged delivery ~40
 DEMO_COSTS = {"tp": 3.0, "fp": 3.0, "fn": 40.0, "tn": 0.0}
 DEMO_CAPACITY = 0.25
+#: three-way variant: actions, and the hold area's capacity (share of parcels)
+THREE_WAY_ACTIONS = ("ship", "repack", "hold")
+THREE_WAY_HOLD_CAPACITY = 0.03
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -28,6 +31,12 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--n-train", type=int, default=4000, metavar="N",
                         help="summer parcels for training (default 4000)")
     parser.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
+    parser.add_argument(
+        "--variant", choices=("damage", "three-way"), default="damage",
+        help="damage (default): inspect or ship; three-way: intact / dented / broken parcels "
+        "routed to ship, repack (4) or hold (12, at most 3%% of parcels), with costs from each "
+        "parcel's value",
+    )
     parser.set_defaults(func=_handler)
 
 
@@ -81,7 +90,117 @@ def run_demo(out: str | Path, *, n_train: int = 4000, seed: int = 0) -> dict:
     }
 
 
+def parcel_costs(X) -> np.ndarray:
+    """Per-parcel (n, 3 outcomes, 3 actions) costs of the three-way variant, from its value.
+
+    Ship: free if intact, a dent costs 30% of the value plus 5, a break the value plus 8.
+    Repack (4): prevents dents; a broken parcel still breaks. Hold (12): nothing leaves damaged.
+    ``X`` is a DataFrame with a ``parcel_value`` column.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> parcel_costs(pd.DataFrame({"parcel_value": [100.0]}))[0].tolist()
+    [[0.0, 4.0, 12.0], [35.0, 4.0, 12.0], [108.0, 112.0, 12.0]]
+    """
+    value = X["parcel_value"].to_numpy(dtype=float)
+    out = np.empty((value.shape[0], 3, 3))
+    out[:, 0, :] = [0.0, 4.0, 12.0]
+    out[:, 1, 0] = 0.3 * value + 5.0
+    out[:, 1, 1] = 4.0
+    out[:, 1, 2] = 12.0
+    out[:, 2, 0] = value + 8.0
+    out[:, 2, 1] = value + 12.0
+    out[:, 2, 2] = 12.0
+    return out
+
+
+def _three_way_frame(n: int, seed: int, season: str = "summer"):
+    from probwrap.datasets import make_parcels
+
+    bunch = make_parcels(n, n_outcomes=3, season=season, random_state=seed, as_frame=True)
+    X = bunch.data.copy()
+    X["parcel_value"] = np.asarray(bunch.parcel_value)
+    return X, np.asarray(bunch.target), bunch
+
+
+def run_three_way_demo(out: str | Path, *, n_train: int = 4000, seed: int = 0) -> dict:
+    """Ship / repack / hold with per-parcel costs; writes ``out/report.html``, returns numbers."""
+    from sklearn.compose import ColumnTransformer
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    from probwrap import CostPolicyWrapper, PriorShiftWrapper
+    from probwrap.report import write_report
+
+    from ._common import progress
+
+    if n_train < 500:
+        raise ValueError("`--n-train` must be at least 500 (damage is rare).")
+    steps = iter(progress(range(4), desc="demo", total=4))
+    X, y, summer = _three_way_frame(n_train, seed)
+    Xt, yt, _ = _three_way_frame(max(n_train // 2, 1000), seed + 1)
+    Xw, yw, _ = _three_way_frame(max(n_train // 2, 1000), seed + 2, season="winter")
+    features = [c for c in X.columns if c != "parcel_value"]
+    # the model never sees the value column; the costs do
+    base = make_pipeline(ColumnTransformer([("features", StandardScaler(), features)]),
+                         LogisticRegression(max_iter=1000))
+    next(steps, None)
+    policy = CostPolicyWrapper(
+        base, costs=parcel_costs, actions=list(THREE_WAY_ACTIONS),
+        capacity={"hold": THREE_WAY_HOLD_CAPACITY}, cv=3, random_state=seed,
+    ).fit(X, y)
+    next(steps, None)
+    shift = PriorShiftWrapper(base, cv=3, n_resamples=100, random_state=seed).fit(X, y)
+    shift.adapt(Xw)
+    next(steps, None)
+    out = Path(out)
+    content = write_report(
+        out / "report.html", model=policy, X=Xt, y=yt, X_unlabelled=Xw, prior_shift=shift,
+        class_names=summer.target_names, n_resamples=100, random_state=seed,
+        title="Parcels: ship, repack or hold (invented demo data)",
+    )
+    next(steps, None)
+    return {
+        "content": content,
+        "true_winter_shares": np.bincount(yw, minlength=3) / yw.shape[0],
+        "rules": {r.key: r for r in content.rules},
+        "report": out / "report.html",
+    }
+
+
+def _three_way_handler(args: argparse.Namespace) -> int:
+    start = time.perf_counter()
+    result = run_three_way_demo(args.out, n_train=args.n_train, seed=args.seed)
+    c = result["content"]
+    print("probwrap demo (three-way): ship / repack (4) / hold (12), costs from each parcel's "
+          f"value, hold capacity {THREE_WAY_HOLD_CAPACITY:.0%}")
+    metric = {m.key: m for m in c.metrics}
+    for key, label in (("ece_top", "top-label calibration error"),
+                       ("ece_classwise", "classwise calibration error")):
+        m = metric[key]
+        print(f"  {label:<30}{m.value:.4f}  [{m.low:.4f}, {m.high:.4f}]")
+    head = "".join(f"{a:>9}" for a in c.action_names)
+    print(f"  {'rule':<58}{'cost/parcel':>12}{head}")
+    for r in c.rules:
+        shares = "".join(f"{100 * s:>8.1f}%" for s in r.shares)
+        print(f"  {r.label:<58}{r.mean_cost:>12.3f}{shares}")
+    print(f"  {'class':<12}{'summer':>10}{'winter (est.)':>16}{'interval':>22}"
+          f"{'true share in the invented sample':>36}")
+    for j, name in enumerate(c.class_names):
+        iv = c.target_interval[j] if c.target_interval is not None else (np.nan, np.nan)
+        print(f"  {name:<12}{c.source_prior[j]:>10.4f}{c.target_prior[j]:>16.4f}"
+              f"{f'[{iv[0]:.4f}, {iv[1]:.4f}]':>22}{result['true_winter_shares'][j]:>36.4f}")
+    print(f"  shift test p-value            {c.shift_pvalue:.3g}")
+    print(f"  report                        {result['report']}  "
+          f"({time.perf_counter() - start:.1f} s)")
+    return 0
+
+
 def _handler(args: argparse.Namespace) -> int:
+    if getattr(args, "variant", "damage") == "three-way":
+        return _three_way_handler(args)
     start = time.perf_counter()
     result = run_demo(args.out, n_train=args.n_train, seed=args.seed)
     c = result["content"]

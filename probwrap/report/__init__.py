@@ -75,7 +75,8 @@ def write_report(
     score, top-label (Guo et al. 2017) and classwise (Kull et al. 2019) calibration error with
     bootstrap intervals and the top-label reliability diagram; the Bayes actions (least
     expected cost), a fitted policy's actions (tuned class offsets, capacity) and the
-    alternatives (most probable class as the action, the best action as if the most probable
+    alternatives (the most probable class as the action when the actions are the classes, the
+    best action as if the most probable
     class were certain, one action for every row) with their realised cost and the share of
     each action, drawn as bars; per-class source and estimated target shares with intervals and
     the shift test. Cost and decision curves need one cutoff, so they are left out there.
@@ -158,8 +159,8 @@ def write_report(
     >>> costs = [[0.0, 4.0, 12.0], [20.0, 4.0, 12.0], [60.0, 64.0, 12.0]]
     >>> content = write_report(out, y_true=three.target, y_prob=three.true_proba, costs=costs,
     ...                        action_names=["ship", "repack", "hold"], n_resamples=20)
-    >>> [r.key for r in content.rules][:2]
-    ['chosen', 'argmax']
+    >>> [r.key for r in content.rules][:3]
+    ['chosen', 'certain', 'all:0']
     """
     content, page = build_report(
         y_true=y_true, y_prob=y_prob, model=model, X=X, y=y, sample_weight=sample_weight,

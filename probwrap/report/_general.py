@@ -348,7 +348,8 @@ def _rules(content, proba, y_index, w, matrix, per_row, policy, policy_costs, X,
         content.budget_threshold = None if b is None else float(b.saving_threshold)
         specs.append(("chosen", "fitted policy", chosen))
         if budget is not None:
-            specs.append(("bayes_capacity", "Bayes actions within capacity", bayes_budget))
+            specs.append(("bayes_capacity", "Bayes actions within capacity (filled on these rows)",
+                          bayes_budget))
         specs.append(("bayes", "Bayes actions (least expected cost)", bayes))
     elif budget is not None:
         content.rule_source = "the Bayes rule filled within capacity on the rows of this report"
@@ -359,7 +360,7 @@ def _rules(content, proba, y_index, w, matrix, per_row, policy, policy_costs, X,
         content.rule_source = "the Bayes rule (least expected cost) on the given probabilities"
         specs.append(("chosen", "Bayes actions (least expected cost)", bayes))
 
-    if n_act == k:
+    if n_act == k and tuple(names) == tuple(content.class_names):
         specs.append(("argmax", "most probable class as the action",
                       lambda p, c: np.argmax(p, axis=1)))
 
