@@ -198,6 +198,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self
         """
         self._check_params()
+        if _multiclass_dask(self.estimator, X, y, sample_weight):
+            # Multiclass Dask rows: no tally (a posterior vector has no single score); the
+            # calibration, source prior and confusion matrices are fitted by reductions over
+            # the model's posteriors kept on the workers (no bootstrap interval).
+            from .scale._multiclass import fit_multiclass_source
+
+            est = fit_multiclass_source(self, X, y, sample_weight)
+            self._source_tally = None
+            return self._finish_fit(est)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
         est = PriorEstimator(
             self.method,
@@ -210,6 +219,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         )
         est.fit(ho.values, ho.y_index, ho.sample_weight)
         self._source_tally = self.tally_ if ho.from_tally else None
+        return self._finish_fit(est)
+
+    def _finish_fit(self, est: PriorEstimator) -> PriorShiftWrapper:
         self.prior_estimator_ = est
         self.source_prior_ = est.source_prior_
         self.confusion_matrix_ = est.confusion_
@@ -257,6 +269,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         rs = self.random_state
         source = getattr(self, "_source_tally", None)
         target = None
+        multiclass = self.classes_.shape[0] > 2
+        if multiclass and (_is_dask(X) or _is_dask(sample_weight)):
+            # Multiclass Dask rows: EM / BBSE as reductions over the calibrated posteriors on
+            # the workers (one pass per EM iteration); a point estimate, no interval.
+            from .scale._multiclass import estimate_multiclass_target
+
+            res = estimate_multiclass_target(est, self.estimator_, X, sample_weight)
+            return self._finish_adapt(res, None)
         if _is_dask(X) or _is_dask(sample_weight):
             # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is
             # estimated from the tally's weighted rows. Bootstrapping tally rows would not
@@ -290,6 +310,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         else:
             res = est.estimate(proba, sample_weight, random_state=rs)
             interval = res.interval
+        return self._finish_adapt(res, interval)
+
+    def _finish_adapt(self, res: Any, interval: Any) -> PriorShiftWrapper:
         self.target_prior_ = res.prior
         self.target_prior_interval_ = interval
         self.shift_pvalue_ = res.shift_pvalue
@@ -300,7 +323,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 "from adapt is stored in target_prior_ for comparison. Set target_prior=None to "
                 "use the estimate.",
                 UserWarning,
-                stacklevel=2,
+                stacklevel=3,
             )
         return self
 
@@ -355,3 +378,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if _is_dask(X):
             return self._dask_predict(self.predict, X, None, self.classes_.dtype)
         return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
+
+
+def _multiclass_dask(estimator: Any, X: Any, y: Any, sample_weight: Any) -> bool:
+    """Dask input with a frozen estimator of more than two classes."""
+    from sklearn.frozen import FrozenEstimator
+
+    dask_input = _is_dask(X) or _is_dask(y) or _is_dask(sample_weight)
+    return (
+        dask_input
+        and isinstance(estimator, FrozenEstimator)
+        and len(getattr(estimator, "classes_", ())) > 2
+    )

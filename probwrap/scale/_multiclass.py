@@ -1,0 +1,296 @@
+"""Multiclass prior shift on Dask input: EM, BBSE and bias-corrected scaling as reductions.
+
+A multiclass posterior vector has no one-dimensional score to tally, so nothing is binned here.
+Instead the model's posteriors stay on the workers (persisted, block by block) and every step of
+the fits is a sum over rows computed per block and added on the client:
+
+- bias-corrected temperature / vector scaling: each Newton step needs the weighted log loss, its
+  gradient and Hessian (sizes k and k x k) — one pass over the blocks per evaluation;
+- the source prior and the hard / soft confusion matrices: one pass;
+- EM: each iteration is one pass computing ``sum_i w_i normalise(p_i * prior / source)``;
+- BBSE / ACC: the target's mean (hard or soft) predicted-class distribution, one pass;
+- the likelihood-ratio test of "no shift": an EM run and one log-likelihood pass.
+
+The client only ever holds k-vectors and k x k matrices. The arithmetic is that of
+:mod:`probwrap.shift` on the same rows, so results agree with the in-memory path up to the order
+of floating-point additions.
+"""
+
+from __future__ import annotations
+
+import warnings
+from typing import Any
+
+import numpy as np
+from scipy.stats import chi2
+from sklearn.exceptions import ConvergenceWarning
+
+__all__ = ["fit_multiclass_source", "estimate_multiclass_target"]
+
+_TINY = np.finfo(float).tiny
+
+
+# -- blocks kept on the workers -----------------------------------------------------------------
+def _source_block(estimator, classes, Xb, yb, wb):
+    from ..calibration._logodds import proba_to_log_proba
+
+    p = np.asarray(estimator.predict_proba(Xb), dtype=float)
+    yb = np.asarray(yb).ravel()
+    pos = np.clip(np.searchsorted(classes, yb), 0, classes.shape[0] - 1)
+    bad = classes[pos] != yb
+    if np.any(bad):
+        raise ValueError(
+            f"`y` has labels {np.unique(yb[bad])[:5].tolist()} that the frozen estimator does "
+            f"not know; its classes are {classes.tolist()}."
+        )
+    w = np.ones(p.shape[0]) if wb is None else np.asarray(wb, dtype=float).ravel()
+    if w.shape[0] != p.shape[0] or not np.all(np.isfinite(w)) or np.any(w < 0):
+        raise ValueError("`sample_weight` must be finite, non-negative and one per row.")
+    return p, proba_to_log_proba(p), pos, w
+
+
+def _target_block(estimator, calibrator, Xb, wb):
+    p = np.asarray(estimator.predict_proba(Xb), dtype=float)
+    if calibrator is not None:
+        p = calibrator.predict(p)
+    w = np.ones(p.shape[0]) if wb is None else np.asarray(wb, dtype=float).ravel()
+    if w.shape[0] != p.shape[0] or not np.all(np.isfinite(w)) or np.any(w < 0):
+        raise ValueError("`sample_weight` must be finite, non-negative and one per row.")
+    return p, w
+
+
+def _persist(dask: Any, parts: list) -> list:
+    return list(dask.persist(*parts))
+
+
+def _reduce(dask: Any, fn, parts: list, *args) -> Any:
+    """Sum of ``fn(part, *args)`` over the blocks (small results only)."""
+    call = dask.delayed(fn, pure=True)
+    results = dask.compute(*[call(part, *args) for part in parts])
+    out = results[0]
+    for r in results[1:]:
+        out = tuple(a + b for a, b in zip(out, r, strict=True)) if isinstance(out, tuple) else out + r
+    return out
+
+
+# -- source side ------------------------------------------------------------------------------
+def _counts(block, k):
+    _, _, y, w = block
+    return np.bincount(y, weights=w, minlength=k), float(np.dot(w, w))
+
+
+def _scaling_terms(block, theta, n_scale, k, total):
+    from ..shift._calibration import _hessian, _log_softmax
+
+    _, z, y, w = block
+    w = w / total
+    a = np.broadcast_to(theta[:n_scale], (k,))
+    b = np.concatenate([[0.0], theta[n_scale:]])
+    logits = z * a + b
+    logp = _log_softmax(logits, axis=1)
+    onehot = np.zeros_like(logp)
+    onehot[np.arange(y.shape[0]), y] = 1.0
+    loss = -float(np.sum(w * np.sum(onehot * logp, axis=1)))
+    resid = (np.exp(logp) - onehot) * w[:, None]
+    g_a = np.sum(resid * z, axis=0)
+    g_scale = np.array([g_a.sum()]) if n_scale == 1 else g_a
+    grad = np.concatenate([g_scale, resid.sum(axis=0)[1:]])
+    hess = _hessian(z, w, n_scale)(logits)
+    return np.array([loss]), grad, hess
+
+
+def _confusions(block, calibrator, k):
+    p, _, y, w = block
+    if calibrator is not None:
+        p = calibrator.predict(p)
+    onehot = np.eye(k)[y]
+    hard = (np.eye(k)[np.argmax(p, axis=1)] * w[:, None]).T @ onehot
+    soft = (p * w[:, None]).T @ onehot
+    return hard, soft
+
+
+def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
+    """Fit a :class:`probwrap.shift.PriorEstimator` from labelled multiclass Dask rows.
+
+    Sets ``estimator_``, ``classes_`` (and feature attributes) on ``owner``; returns the
+    estimator, whose ``n_resamples`` is 0 (no bootstrap for multiclass Dask input).
+    """
+    from sklearn.frozen import FrozenEstimator
+
+    from ..shift import PriorEstimator
+    from ..shift._calibration import BiasCorrectedScaling, _newton
+    from ._dask import _aligned_blocks, _import_dask, _row_blocks
+
+    dask, _ = _import_dask()
+    estimator = owner.estimator
+    if not isinstance(estimator, FrozenEstimator):
+        raise ValueError(
+            "Dask input needs an already fitted estimator wrapped in "
+            "sklearn.frozen.FrozenEstimator; got " + type(estimator).__name__ + "."
+        )
+    if y is None:
+        raise ValueError(f"{type(owner).__name__} requires y to be passed, but the target y is None.")
+    classes = np.asarray(estimator.classes_)
+    k = classes.shape[0]
+    blocks, lengths = _row_blocks(X)
+    ys = _aligned_blocks(y, "y", X, blocks, lengths)
+    ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
+    make = dask.delayed(_source_block, pure=True)
+    parts = _persist(
+        dask, [make(estimator, classes, b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
+    )
+    try:
+        class_weight, _ = _reduce(dask, _counts, parts, k)
+        total = float(class_weight.sum())
+        if total <= 0:
+            raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+        if np.any(class_weight <= 0):
+            raise ValueError(
+                f"`y` has no (positively weighted) rows of class index(es) "
+                f"{np.flatnonzero(class_weight <= 0).tolist()}; every class needs held-out rows "
+                "to estimate its prior."
+            )
+        est = PriorEstimator(
+            owner.method, calibration=owner.calibration, tol=owner.em_tol,
+            max_iter=owner.em_max_iter, n_resamples=0,
+            confidence_level=owner.confidence_level, random_state=owner.random_state,
+        )
+        est._check_params()
+        cal = None
+        if owner.calibration is not None:
+            kind = "temperature" if owner.calibration == "bcts" else "vector"
+            n_scale = 1 if kind == "temperature" else k
+            cache: dict = {}
+
+            def terms(theta):
+                key = theta.tobytes()
+                if key not in cache:
+                    cache.clear()
+                    cache[key] = _reduce(dask, _scaling_terms, parts, theta, n_scale, k, total)
+                return cache[key]
+
+            def loss_grad(theta):
+                loss, grad, _ = terms(theta)
+                return float(loss[0]), grad
+
+            def hess(theta):
+                return terms(theta)[2]
+
+            theta0 = np.concatenate([np.ones(n_scale), np.zeros(k - 1)])
+            theta, converged = _newton(loss_grad, hess, theta0, n_scale)
+            cal = BiasCorrectedScaling(kind=kind)
+            cal.scale_ = np.array(np.broadcast_to(theta[:n_scale], (k,)), dtype=float)
+            cal.bias_ = np.concatenate([[0.0], theta[n_scale:]])
+            cal.n_classes_ = k
+            cal.converged_ = bool(converged)
+        hard, soft = _reduce(dask, _confusions, parts, cal, k)
+    finally:
+        parts.clear()  # release the persisted blocks on the workers
+    est.n_classes_ = k
+    est.calibrator_ = cal
+    est.source_prior_ = class_weight / total
+    est.confusion_ = hard / total
+    est.soft_confusion_ = soft / total
+    est._src = None
+    owner.estimator_ = estimator
+    owner.classes_ = classes
+    if hasattr(estimator, "n_features_in_"):
+        owner.n_features_in_ = estimator.n_features_in_
+    if hasattr(estimator, "feature_names_in_"):
+        owner.feature_names_in_ = estimator.feature_names_in_
+    return est
+
+
+# -- target side ------------------------------------------------------------------------------
+def _em_step(block, ratio_prior):
+    p, w = block
+    num = p * ratio_prior
+    den = num.sum(axis=1, keepdims=True)
+    return w @ (num / np.maximum(den, _TINY))
+
+
+def _means(block, k):
+    p, w = block
+    hard = w @ np.eye(k)[np.argmax(p, axis=1)]
+    return w @ p, hard, np.array([w.sum(), float(np.dot(w, w)), p.shape[0]])
+
+
+def _loglik(block, src, priors):
+    p, w = block
+    mix = (p / src) @ priors.T  # (n, number of priors)
+    return w @ np.log(np.maximum(mix, _TINY))
+
+
+def _em_dask(dask, parts, src, init, total, tol, max_iter):
+    prior = init.copy()
+    for it in range(1, max_iter + 1):
+        new = _reduce(dask, _em_step, parts, prior / src) / total
+        new = new / new.sum()
+        step = np.max(np.abs(new - prior))
+        prior = new
+        if step < tol:
+            return prior, it, True
+    return prior, max_iter, False
+
+
+def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None):
+    """Prior estimate (a :class:`probwrap.shift.PriorEstimate`) of unlabelled multiclass Dask rows.
+
+    No interval (``interval=None``).
+    """
+    from ..shift import PriorEstimate, acc_prior, bbse_prior
+    from ._dask import _aligned_blocks, _import_dask, _row_blocks
+
+    dask, _ = _import_dask()
+    k = est.n_classes_
+    blocks, lengths = _row_blocks(X)
+    ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
+    make = dask.delayed(_target_block, pure=True)
+    parts = _persist(dask, [make(estimator, est.calibrator_, b, wb) for b, wb in zip(blocks, ws, strict=True)])
+    try:
+        soft_mean, hard_mean, (total, _, n_rows) = _reduce(dask, _means, parts, k)
+        if total <= 0:
+            raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+        src = est.source_prior_
+        method = est.method
+        n_iter, converged = 0, True
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ConvergenceWarning)
+            test_prior, _, _ = _em_dask(dask, parts, src, src.copy(), total, 1e-8, 10_000)
+        if method == "em":
+            prior, n_iter, converged = _em_dask(
+                dask, parts, src, src.copy(), total, float(est.tol), int(est.max_iter)
+            )
+            if not converged:
+                warnings.warn(
+                    f"EM prior estimation did not converge within max_iter={est.max_iter} "
+                    f"iterations (tol={est.tol}); the last iterate is returned. Raise `max_iter` "
+                    "or `tol`.",
+                    ConvergenceWarning,
+                    stacklevel=3,
+                )
+        else:
+            # the estimators need only the target's mean (hard or soft) prediction: pass it as
+            # a single row with soft=True, which uses that row as the mean
+            soft = method in ("bbse_soft", "pacc")
+            mu = (soft_mean if soft else hard_mean) / total
+            conf = est.soft_confusion_ if soft else est.confusion_
+            if method.startswith("bbse"):
+                point = bbse_prior(mu[None, :], conf, src, soft=True)
+            else:
+                point = acc_prior(mu[None, :], conf, soft=True)
+            prior = point.prior
+        ll = _reduce(dask, _loglik, parts, src, np.vstack([test_prior, src]))
+    finally:
+        parts.clear()
+    stat = max(2.0 * float(ll[0] - ll[1]), 0.0)
+    return PriorEstimate(
+        prior=prior,
+        method=method,
+        n_iter=n_iter,
+        converged=converged,
+        n_rows=int(n_rows),
+        interval=None,
+        shift_statistic=stat,
+        shift_pvalue=float(chi2.sf(stat, k - 1)),
+    )
