@@ -194,3 +194,74 @@ def test_demo_unknown_variant_exit_2(tmp_path):
     with pytest.raises(SystemExit) as exc:
         main(["demo", "--variant", "four-way", "--out", str(tmp_path)])
     assert exc.value.code == 2
+
+
+@pytest.fixture(scope="module")
+def class_files(tmp_path_factory):
+    d = tmp_path_factory.mktemp("classes")
+    s = make_parcels(1500, n_outcomes=3, random_state=5)
+    frame = pd.DataFrame(s.true_proba, columns=s.target_names)
+    frame["outcome"] = [s.target_names[i] for i in s.target]
+    frame.to_csv(d / "three.csv", index=False)
+    return d, s
+
+
+def test_report_verb_class_columns(class_files, tmp_path, capsys):
+    import numpy as np
+
+    d, s = class_files
+    out = tmp_path / "three.html"
+    args = ["report", "--scores", str(d / "three.csv"), "--class-columns",
+            "intact,dented,broken", "--label-column", "outcome", "--cost-matrix",
+            "0,4,12;20,4,12;60,64,12", "--actions", "ship,repack,hold", "--capacity", "0.03",
+            "--capacity-action", "hold", "--resamples", "10", "--out", str(out)]
+    assert main(args) == 0
+    text = capsys.readouterr().out
+    assert "3 classes" in text
+    page = _parse(out)
+    assert page.figures == ["fig-reliability", "fig-actions"]
+    # the printed mean cost is the Bayes rule filled within the hold capacity
+    from probwrap.decision import budget_actions, fit_action_budget
+
+    C = np.array([[0, 4, 12], [20, 4, 12], [60, 64, 12.0]])
+    P = pd.read_csv(d / "three.csv")[["intact", "dented", "broken"]].to_numpy()
+    E = P @ C
+    b = fit_action_budget(E, 2, 0.03)
+    acts = budget_actions(E, 2, b.saving_threshold)
+    cost = float(text.split("rule in use ")[1].split()[0].rstrip(","))
+    assert cost == pytest.approx(C[s.target, acts].mean(), abs=5e-5)
+
+
+@pytest.mark.parametrize(
+    "extra, code, message",
+    [
+        (["--cost-matrix", "0,4;20,4"], 2, "rows"),
+        (["--cost-matrix", "0,4,12;20,4,12;60,64,12", "--actions", "ship,hold"], 2,
+         "--actions"),
+        (["--cost-matrix", "0,4,x;20,4,12;60,64,12"], 2, "--cost-matrix"),
+        (["--cost-matrix", "0,4,12;20,4,12;60,64,12", "--actions", "ship,repack,hold",
+          "--capacity", "0.1"], 2, "--capacity-action"),
+    ],
+)
+def test_report_verb_class_columns_errors(class_files, tmp_path, capsys, extra, code, message):
+    d, _ = class_files
+    args = ["report", "--scores", str(d / "three.csv"), "--class-columns",
+            "intact,dented,broken", "--label-column", "outcome", "--out",
+            str(tmp_path / "x.html"), *extra]
+    with pytest.raises(SystemExit) as exc:
+        main(args)
+    assert exc.value.code == code
+    assert message in capsys.readouterr().err
+
+
+def test_report_verb_class_columns_bad_labels(class_files, tmp_path, capsys):
+    d, s = class_files
+    frame = pd.read_csv(d / "three.csv")
+    frame.loc[4, "outcome"] = "lost"
+    frame.to_csv(tmp_path / "bad.csv", index=False)
+    args = ["report", "--scores", str(tmp_path / "bad.csv"), "--class-columns",
+            "intact,dented,broken", "--label-column", "outcome", "--out",
+            str(tmp_path / "x.html")]
+    assert main(args) == 1
+    err = capsys.readouterr().err
+    assert "bad.csv" in err and "row 6" in err and "'lost'" in err
