@@ -162,6 +162,8 @@ class CalibrationWrapper(HeldOutClassifierBase):
         self
         """
         self._check_method()
+        if _multiclass_dask(self.estimator, X, y, sample_weight):
+            return self._fit_multiclass_dask(X, y, sample_weight)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
         self.response_ = ho.response
         scores = self._to_scores(ho.values)
@@ -175,6 +177,24 @@ class CalibrationWrapper(HeldOutClassifierBase):
             self.method_ = self.method
             template = CALIBRATION_METHODS[self.method]()
         self.calibrator_ = self._fit_map(template, scores, ho.y_index, ho.sample_weight)
+        return self
+
+    def _fit_multiclass_dask(self, X: Any, y: Any, sample_weight: Any) -> CalibrationWrapper:
+        """Multiclass Dask rows with a frozen estimator: temperature scaling by reductions over
+        the score blocks, binary maps one-vs-rest from per-class score tallies."""
+        from .scale._multiclass import fit_multiclass_calibration
+
+        if isinstance(self.method, CalibrationMap):
+            self.method_ = type(self.method).__name__
+            template = self.method
+        elif self.method == "auto":
+            raise ValueError(
+                "method='auto' is not supported for multiclass Dask input; name the method."
+            )
+        else:
+            self.method_ = self.method
+            template = CALIBRATION_METHODS[self.method]()
+        self.calibrator_ = fit_multiclass_calibration(self, X, y, sample_weight, template)
         return self
 
     def _check_method(self) -> None:
@@ -398,3 +418,15 @@ class CalibrationWrapper(HeldOutClassifierBase):
         for k, m in enumerate(self.calibrator_):
             out[:, k, :] = m if isinstance(m, float) else m.predict_interval(ovr[:, k])
         return out
+
+
+def _multiclass_dask(estimator: Any, X: Any, y: Any, sample_weight: Any) -> bool:
+    """Dask input with a frozen estimator of more than two classes."""
+    from sklearn.frozen import FrozenEstimator
+
+    dask_input = _is_dask(X) or _is_dask(y) or _is_dask(sample_weight)
+    return (
+        dask_input
+        and isinstance(estimator, FrozenEstimator)
+        and len(getattr(estimator, "classes_", ())) > 2
+    )

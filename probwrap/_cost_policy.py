@@ -254,6 +254,10 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             raise ValueError(
                 "`costs` as a function of X is not supported for Dask input; give a cost matrix."
             )
+        if dask_input and is_frozen(self.estimator) and len(
+            getattr(self.estimator, "classes_", ())
+        ) > 2:
+            return self._fit_multiclass_dask(X, y, sample_weight)
         needs_heldout = (
             self.strategy == "tuned"
             or self.capacity is not None
@@ -319,6 +323,46 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             )
             w = ho.sample_weight
             self.heldout_cost_ = float(np.dot(w, realised) / w.sum())
+        return self
+
+    def _fit_multiclass_dask(self, X: Any, y: Any, sample_weight: Any) -> CostPolicyWrapper:
+        """Multiclass Dask rows with a frozen estimator: the plug-in (or fixed-offset) rule needs
+        no fitting; ``heldout_cost_`` is a reduction over the blocks."""
+        if self.strategy == "tuned" or self.capacity is not None:
+            raise ValueError(
+                "Multiclass Dask input supports strategy='bayes' or 'fixed' without a capacity; "
+                "tuning offsets or fitting a capacity needs the held-out rows in memory."
+            )
+        from .scale._multiclass import heldout_cost_dask
+
+        est = self.estimator
+        self.estimator_ = est
+        self.classes_ = np.asarray(est.classes_)
+        if hasattr(est, "n_features_in_"):
+            self.n_features_in_ = est.n_features_in_
+        if hasattr(est, "feature_names_in_"):
+            self.feature_names_in_ = est.feature_names_in_
+        k = self.classes_.shape[0]
+        if self._binary_only():
+            raise ValueError(
+                f"{_BINARY_ONLY} with binary costs (tp/fp/fn/tn) or a single cutoff; `y` has "
+                f"{k} classes. Give an ({k}, n_actions) cost matrix, or per-class offsets as "
+                "`cutoff`."
+            )
+        matrix = zero_one_costs(k) if self.costs is None else check_cost_matrix(
+            self.costs, n_classes=k
+        )
+        self.cost_matrix_ = matrix
+        self.actions_ = self._resolve_actions(matrix.shape[1])
+        self._plain = self.costs is None and self.strategy != "fixed"
+        self._cutoff_mode = False
+        self.cutoff_ = None
+        self.cost_curve_ = None
+        self.action_budget_ = None
+        self._interval_inputs = None
+        self._interval_cache = None
+        self._fit_offsets(None, None, matrix, None, k, None, None)
+        self.heldout_cost_ = heldout_cost_dask(self, X, y, sample_weight)
         return self
 
     def _check_heldout_proba(self, values: np.ndarray, k: int) -> np.ndarray:

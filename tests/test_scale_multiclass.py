@@ -63,3 +63,50 @@ def test_multiclass_dask_matches_in_memory(client, model, method, calibration):
     p = remote.predict_proba(da.from_array(X_new, chunks=(2000, 2)))
     assert isinstance(p, da.Array)
     np.testing.assert_allclose(p.compute(), local.predict_proba(X_new), atol=1e-5)
+
+
+@pytest.mark.parametrize(("method", "tol"), [("temperature", 1e-9), ("platt", 1e-4),
+                                             ("isotonic", 3e-3)])
+def test_multiclass_calibration_on_dask(client, model, method, tol):
+    from sklearn.metrics import log_loss
+
+    from probwrap import CalibrationWrapper
+
+    X, y = _data(12_000, 3, [0.5, 0.3, 0.2])
+    Xd = da.from_array(X, chunks=(3000, 2))
+    remote = CalibrationWrapper(model, method=method).fit(Xd, da.from_array(y, chunks=3000))
+    local = CalibrationWrapper(model, method=method).fit(X, y)  # reference: in memory, all rows
+    p_remote = remote.predict_proba(Xd).compute()
+    p_local = local.predict_proba(X)
+    if method == "temperature":
+        # same root of the same loss slope: the temperatures agree to the solver's tolerance
+        assert remote.calibrator_.temperature_ == pytest.approx(
+            local.calibrator_.temperature_, rel=1e-9
+        )
+        assert local.calibrator_.temperature_ < 0.95  # the shrunk model is under-confident
+    elif method == "platt":
+        # one-vs-rest Platt maps from tallies: scikit-learn's log_loss within 1e-4
+        assert abs(log_loss(y, p_remote) - log_loss(y, p_local)) < tol
+    else:
+        assert np.mean(np.abs(p_remote - p_local)) < tol
+    np.testing.assert_allclose(p_remote, remote.predict_proba(X))
+
+
+def test_multiclass_cost_policy_on_dask(client, model):
+    from probwrap import CostPolicyWrapper
+
+    X, y = _data(9000, 4, [0.5, 0.3, 0.2])
+    w = np.random.default_rng(5).uniform(0.5, 1.5, size=y.shape[0])
+    costs = np.array([[0.0, 4.0, 9.0], [1.0, 0.0, 3.0], [6.0, 2.0, 0.0]])
+    Xd = da.from_array(X, chunks=(3000, 2))
+    remote = CostPolicyWrapper(model, costs=costs).fit(
+        Xd, da.from_array(y, chunks=3000), sample_weight=da.from_array(w, chunks=3000)
+    )
+    local = CostPolicyWrapper(model, costs=costs).fit(X, y, sample_weight=w)  # in memory
+    assert remote.heldout_cost_ == pytest.approx(local.heldout_cost_, rel=1e-12)
+    # direct reference: argmin of P @ C with the frozen model's scikit-learn predict_proba
+    act = np.argmin(model.predict_proba(X) @ costs, axis=1)
+    assert remote.heldout_cost_ == pytest.approx(np.dot(w, costs[y, act]) / w.sum(), rel=1e-12)
+    np.testing.assert_array_equal(remote.predict(Xd).compute(), local.predict(X))
+    with pytest.raises(ValueError, match="bayes"):
+        CostPolicyWrapper(model, costs=costs, strategy="tuned").fit(Xd, da.from_array(y, chunks=3000))
