@@ -250,14 +250,11 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         """
         self._check_params()
         dask_input = _is_dask(X) or _is_dask(y) or _is_dask(sample_weight)
-        if dask_input and callable(self.costs):
-            raise ValueError(
-                "`costs` as a function of X is not supported for Dask input; give a cost matrix."
-            )
-        if dask_input and is_frozen(self.estimator) and len(
-            getattr(self.estimator, "classes_", ())
-        ) > 2:
-            return self._fit_multiclass_dask(X, y, sample_weight)
+        if dask_input and (
+            callable(self.costs)
+            or (is_frozen(self.estimator) and len(getattr(self.estimator, "classes_", ())) > 2)
+        ):
+            return self._fit_rule_dask(X, y, sample_weight)
         needs_heldout = (
             self.strategy == "tuned"
             or self.capacity is not None
@@ -325,15 +322,23 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             self.heldout_cost_ = float(np.dot(w, realised) / w.sum())
         return self
 
-    def _fit_multiclass_dask(self, X: Any, y: Any, sample_weight: Any) -> CostPolicyWrapper:
-        """Multiclass Dask rows with a frozen estimator: the plug-in (or fixed-offset) rule needs
-        no fitting; ``heldout_cost_`` is a reduction over the blocks."""
+    def _fit_rule_dask(self, X: Any, y: Any, sample_weight: Any) -> CostPolicyWrapper:
+        """Dask rows with a frozen estimator, for multiclass models or costs given as a function
+        of ``X``: the plug-in (or fixed-offset) rule needs no fitting beyond the estimator, and
+        ``heldout_cost_`` is a reduction over the blocks (``costs(X)`` evaluated per block)."""
+        if not is_frozen(self.estimator):
+            raise ValueError(
+                "Dask input needs an already fitted estimator wrapped in "
+                "sklearn.frozen.FrozenEstimator; got "
+                f"{type(self.estimator).__name__}."
+            )
         if self.strategy == "tuned" or self.capacity is not None:
             raise ValueError(
-                "Multiclass Dask input supports strategy='bayes' or 'fixed' without a capacity; "
-                "tuning offsets or fitting a capacity needs the held-out rows in memory."
+                "Dask input with a multiclass model or costs as a function of X supports "
+                "strategy='bayes' or 'fixed' without a capacity; tuning or fitting a capacity "
+                "on such rows needs them in memory."
             )
-        from .scale._multiclass import heldout_cost_dask
+        from .scale._multiclass import first_block_row_costs, heldout_cost_dask
 
         est = self.estimator
         self.estimator_ = est
@@ -343,17 +348,22 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         if hasattr(est, "feature_names_in_"):
             self.feature_names_in_ = est.feature_names_in_
         k = self.classes_.shape[0]
-        if self._binary_only():
+        if self._binary_only() and k != 2:
             raise ValueError(
                 f"{_BINARY_ONLY} with binary costs (tp/fp/fn/tn) or a single cutoff; `y` has "
                 f"{k} classes. Give an ({k}, n_actions) cost matrix, or per-class offsets as "
                 "`cutoff`."
             )
-        matrix = zero_one_costs(k) if self.costs is None else check_cost_matrix(
-            self.costs, n_classes=k
-        )
+        if callable(self.costs):
+            matrix = None
+            n_actions = first_block_row_costs(self, X, k).shape[2]
+        else:
+            matrix = zero_one_costs(k) if self.costs is None else check_cost_matrix(
+                self.costs, n_classes=k
+            )
+            n_actions = matrix.shape[1]
         self.cost_matrix_ = matrix
-        self.actions_ = self._resolve_actions(matrix.shape[1])
+        self.actions_ = self._resolve_actions(n_actions)
         self._plain = self.costs is None and self.strategy != "fixed"
         self._cutoff_mode = False
         self.cutoff_ = None
@@ -500,7 +510,14 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         return self.actions_[self._decide(proba, costs)]
 
     def expected_costs(self, X: Any) -> np.ndarray:
-        """Expected cost of every action under the wrapped model's probabilities, (n, n_actions)."""
+        """Expected cost of every action under the wrapped model's probabilities, (n, n_actions).
+
+        For Dask input the result is a Dask array computed block by block (costs given as a
+        function of ``X`` are evaluated on each block, so the function must work row by row).
+        """
+        if _is_dask(X):
+            check_is_fitted(self, "actions_")
+            return self._dask_predict(self.expected_costs, X, self.actions_.shape[0])
         proba = self.predict_proba(X)
         return expected_costs(proba, self._costs_for(X))
 

@@ -341,14 +341,57 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         :func:`probwrap.shift.prior_by_batch` (fields ``batch``, ``n_rows``, ``prior``,
         ``lower``, ``upper``, ``shift_statistic``, ``shift_pvalue``, ``converged``), with
         columns of ``prior`` in ``classes_`` order.
+
+        For Dask input each Dask block is one batch (``batches`` must be None; ``batch_size``
+        may be given if it equals the block length), estimated on the worker that holds it.
+        After a fit on Dask input the intervals come from the labelled tally's Poisson
+        replicates (binary) or are the point estimate itself (multiclass: no bootstrap).
         """
         check_is_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to monitor")
+        if _is_dask(X) or _is_dask(sample_weight):
+            # One batch per Dask block, estimated on the worker holding it.
+            from .scale._dask import monitor_dask
+
+            return monitor_dask(self, X, batches, batch_size, sample_weight)
         proba = self._inner_output(X, "predict_proba")
-        return prior_by_batch(
-            self.prior_estimator_, proba, batches, batch_size=batch_size,
-            sample_weight=sample_weight,
+        est = self.prior_estimator_
+        source = getattr(self, "_source_tally", None)
+        if source is None or source.n_replicates == 0 or est.n_resamples == 0:
+            return prior_by_batch(
+                est, proba, batches, batch_size=batch_size, sample_weight=sample_weight
+            )
+        # Fitted on Dask input: the labelled rows are a tally, so each batch's interval is a
+        # Poisson bootstrap over the tally's replicates and the batch's rows.
+        import copy
+
+        from sklearn.utils import check_random_state
+
+        from ._validation import check_sample_weight
+        from .scale._bootstrap import tally_prior_interval
+
+        point = copy.copy(est)
+        point.n_resamples = 0
+        table = prior_by_batch(
+            point, proba, batches, batch_size=batch_size, sample_weight=sample_weight
         )
+        p = np.asarray(proba, dtype=float)
+        n = p.shape[0]
+        w = check_sample_weight(sample_weight, n)
+        if batch_size is not None:
+            labels = np.arange(n) // int(batch_size)
+        else:
+            labels = np.asarray(batches)
+            labels = labels.astype(str) if labels.dtype == object else labels
+        rng = check_random_state(est.random_state)
+        for i in range(table.shape[0]):
+            rows = labels == table["batch"][i]
+            iv = tally_prior_interval(
+                est, source, p[rows], w[rows], None, table["prior"][i],
+                n_replicates=est.n_resamples, seed=rng.randint(2**31 - 1),
+            )
+            table["lower"][i], table["upper"][i] = iv[:, 0], iv[:, 1]
+        return table
 
     # -- prediction ------------------------------------------------------------------------------
     def _prior_in_use(self) -> np.ndarray | None:

@@ -310,3 +310,80 @@ def dask_predict(method: Any, X: Any, n_columns: int | None, dtype: Any = float)
         shape = (n_i,) if n_columns is None else (n_i, n_columns)
         out.append(da.from_delayed(dask.delayed(method)(b), shape=shape, dtype=dtype))
     return da.concatenate(out, axis=0)
+
+
+# -- PriorShiftWrapper.monitor on Dask input: one batch per block --------------------------------
+def _monitor_block(owner, est, source, seed, Xb, wb):
+    """Prior estimate of one block on the worker that holds it (a block fits in memory)."""
+    from .._validation import check_sample_weight
+    from ._bootstrap import tally_prior_interval
+
+    proba = np.asarray(owner.estimator_.predict_proba(Xb), dtype=float)
+    w = check_sample_weight(wb, proba.shape[0])
+    if source is None or source.n_replicates == 0 or est.n_resamples == 0:
+        res = est.estimate(proba, w, random_state=seed)
+        interval = res.interval
+    else:
+        import copy
+
+        point = copy.copy(est)
+        point.n_resamples = 0
+        res = point.estimate(proba, w, random_state=seed)
+        interval = tally_prior_interval(
+            est, source, proba, w, None, res.prior, n_replicates=est.n_resamples, seed=seed
+        )
+    if interval is None:
+        interval = np.column_stack([res.prior, res.prior])
+    return (proba.shape[0], res.prior, interval[:, 0], interval[:, 1], res.shift_statistic,
+            res.shift_pvalue, res.converged)
+
+
+def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weight: Any):
+    """Per-batch prior estimates of unlabelled Dask rows, one batch per Dask block.
+
+    ``batch_size`` may be given if it equals the block length (every block but the last).
+    Each block's estimate runs on the worker holding the block; only the k-vectors come back.
+    The bootstrap seeds are drawn on the client in batch order exactly as
+    :func:`probwrap.shift.prior_by_batch` draws them, so an in-memory model gives the table of
+    ``prior_by_batch(..., batch_size=block length)`` on the same rows.
+    """
+    from sklearn.utils import check_random_state
+
+    dask, _ = _import_dask()
+    if batches is not None:
+        raise ValueError(
+            "`batches` (a label per row) is not supported for Dask input: each Dask block is a "
+            "batch; rechunk the rows by batch, or give batch_size equal to the block length."
+        )
+    blocks, lengths = _row_blocks(X)
+    if batch_size is not None:
+        if lengths is None or any(c != batch_size for c in lengths[:-1]) or lengths[-1] > batch_size:
+            raise ValueError(
+                f"`batch_size`={batch_size!r} does not match the Dask blocks (lengths "
+                f"{lengths if lengths is None else lengths[:5]}...); batches are the blocks, so "
+                "rechunk X to batch_size rows or leave batch_size=None."
+            )
+    ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
+    est = owner.prior_estimator_
+    rng = check_random_state(est.random_state)
+    seeds = [rng.randint(2**31 - 1) for _ in blocks]
+    source = getattr(owner, "_source_tally", None)
+    call = dask.delayed(_monitor_block, pure=True)
+    rows = dask.compute(
+        *[call(owner, est, source, s, b, wb) for s, b, wb in zip(seeds, blocks, ws, strict=True)]
+    )
+    k = est.n_classes_
+    dtype = [
+        ("batch", np.int64),
+        ("n_rows", np.int64),
+        ("prior", float, (k,)),
+        ("lower", float, (k,)),
+        ("upper", float, (k,)),
+        ("shift_statistic", float),
+        ("shift_pvalue", float),
+        ("converged", bool),
+    ]
+    table = np.zeros(len(rows), dtype=dtype)
+    for i, r in enumerate(rows):
+        table[i] = (i, *r)
+    return table

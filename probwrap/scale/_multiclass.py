@@ -466,8 +466,22 @@ def _cost_block(policy, Xb, yb, wb):
     proba = policy.estimator_.predict_proba(Xb)
     y = _label_index(policy.classes_, yb)
     w = _weights(wb, proba.shape[0])
-    chosen = policy._decide(proba, policy.cost_matrix_)
-    return np.array([w @ policy.cost_matrix_[y, chosen], w.sum()])
+    costs = policy._costs_for(Xb)
+    chosen = policy._decide(proba, costs)
+    if costs.ndim == 2:
+        realised = costs[y, chosen]
+    else:
+        realised = costs[np.arange(chosen.shape[0]), y, chosen]
+    return np.array([w @ realised, w.sum()])
+
+
+def first_block_row_costs(policy: Any, X: Any, k: int) -> np.ndarray:
+    """``costs(X)`` of the first Dask block (validated), to learn the number of actions."""
+    from ._dask import _import_dask, _row_blocks
+
+    dask, _ = _import_dask()
+    blocks, _ = _row_blocks(X)
+    return dask.delayed(policy._row_costs, pure=True)(blocks[0], k).compute()
 
 
 def heldout_cost_dask(policy: Any, X: Any, y: Any, sample_weight: Any) -> float:
