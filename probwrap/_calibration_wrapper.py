@@ -87,6 +87,9 @@ class CalibrationWrapper(HeldOutClassifierBase):
         cannot dominate the fit. Order-based maps (isotonic, binning, Venn–Abers) always see the
         full-resolution log-odds ``log p1 - log p0``, which keep the order of probabilities deep
         in the tails; exact zeros become the smallest positive float.
+    tally_resolution : float, default=1e-3
+        Dask input only: bin width on the log-odds scale of the score tallies that the
+        predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
 
     Attributes
     ----------
@@ -133,6 +136,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
         random_state: Any = None,
         candidates: Any = None,
         clip: float = DEFAULT_CLIP,
+        tally_resolution: float = 1e-3,
     ) -> None:
         self.estimator = estimator
         self.method = method
@@ -141,6 +145,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
         self.random_state = random_state
         self.candidates = candidates
         self.clip = clip
+        self.tally_resolution = tally_resolution
 
     # -- fitting ---------------------------------------------------------------------------
     def fit(self, X: Any, y: Any, sample_weight: Any = None, **fit_params: Any) -> CalibrationWrapper:

@@ -97,6 +97,9 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         Bootstrap resamples for ``cutoff_interval_``.
     confidence_level : float, default=0.95
         Coverage of ``cutoff_interval_``.
+    tally_resolution : float, default=1e-3
+        Dask input only: bin width on the log-odds scale of the score tallies that the
+        predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
 
     Attributes
     ----------
@@ -155,6 +158,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         random_state: Any = None,
         n_resamples: int = 200,
         confidence_level: float = 0.95,
+        tally_resolution: float = 1e-3,
     ) -> None:
         self.estimator = estimator
         self.costs = costs
@@ -167,6 +171,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         self.random_state = random_state
         self.n_resamples = n_resamples
         self.confidence_level = confidence_level
+        self.tally_resolution = tally_resolution
 
     # -- parameter checks ------------------------------------------------------------------
     def _check_params(self) -> None:

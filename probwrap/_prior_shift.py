@@ -69,6 +69,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         Parallel folds.
     random_state : int, RandomState or None, default=None
         Seeds the folds and the bootstrap.
+    tally_resolution : float, default=1e-3
+        Dask input only: bin width on the log-odds scale of the score tallies that the
+        predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
 
     Attributes
     ----------
@@ -128,6 +131,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         cv: Any = 5,
         n_jobs: int | None = None,
         random_state: Any = None,
+        tally_resolution: float = 1e-3,
     ) -> None:
         self.estimator = estimator
         self.target_prior = target_prior
@@ -140,6 +144,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.cv = cv
         self.n_jobs = n_jobs
         self.random_state = random_state
+        self.tally_resolution = tally_resolution
 
     # -- parameters ------------------------------------------------------------------------------
     def _check_params(self) -> None:
@@ -282,11 +287,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # estimated from the tally's weighted rows. Bootstrapping tally rows would not
             # resample the original rows, so the interval comes from Poisson replicates tallied
             # alongside.
-            from .scale._dask import unlabelled_proba_from_dask
+            from .scale._dask import owner_resolution, unlabelled_proba_from_dask
 
             proba, sample_weight, target = unlabelled_proba_from_dask(
                 self.estimator_, X, sample_weight, n_replicates=est.n_resamples,
-                random_state=rs,
+                random_state=rs, resolution=owner_resolution(self),
             )
         else:
             proba = self._inner_output(X, "predict_proba")

@@ -94,3 +94,24 @@ def test_expected_costs_and_row_costs_on_dask(client, model):
     np.testing.assert_array_equal(remote.predict(Xd).compute(), (p * value > 1 - p).astype(int))
     fixed = CostPolicyWrapper(model, costs={"fp": 1.0, "fn": 4.0}).fit(Xd, da.from_array(y, chunks=1500))
     np.testing.assert_allclose(fixed.expected_costs(Xd).compute(), fixed.expected_costs(X))
+
+
+def test_tally_resolution_is_used_and_checked(client, model):
+    from sklearn.base import clone
+
+    from probwrap import CalibrationWrapper
+
+    X, y = _data(8000, seed=7)
+    Xd, yd = da.from_array(X, chunks=(2000, 3)), da.from_array(y, chunks=2000)
+    coarse = CalibrationWrapper(model, method="isotonic", tally_resolution=0.25).fit(Xd, yd)
+    fine = CalibrationWrapper(model, method="isotonic").fit(Xd, yd)
+    assert coarse.tally_.resolution == 0.25 and fine.tally_.resolution == 1e-3
+    # bins of width 0.25 on the log-odds scale: every occupied bin index is round(s / 0.25)
+    s = np.log(model.predict_proba(X)[:, 1]) - np.log(model.predict_proba(X)[:, 0])
+    np.testing.assert_array_equal(coarse.tally_.bins, np.unique(np.floor(s / 0.25 + 0.5)))
+    assert clone(coarse).get_params()["tally_resolution"] == 0.25
+    with pytest.raises(ValueError, match="tally_resolution"):
+        CalibrationWrapper(model, method="platt", tally_resolution=0).fit(Xd, yd)
+    policy = CostPolicyWrapper(model, costs={"fp": 1.0, "fn": 6.0}, strategy="tuned",
+                               n_resamples=0, tally_resolution=0.5).fit(Xd, yd)
+    assert policy.tally_.resolution == 0.5

@@ -11,7 +11,13 @@ from typing import Any
 
 import numpy as np
 
-from ._tally import DEFAULT_RESOLUTION, ScoreTally, _tally_block, replicate_seed
+from ._tally import (
+    DEFAULT_RESOLUTION,
+    ScoreTally,
+    _check_resolution,
+    _tally_block,
+    replicate_seed,
+)
 
 __all__ = ["is_dask_collection", "tally_dask_scores", "heldout_from_dask", "dask_predict"]
 
@@ -196,6 +202,17 @@ def dask_tally_of_model(
     return _tree_merge(dask, parts).compute()
 
 
+def owner_resolution(owner: Any) -> float:
+    """A wrapper's ``tally_resolution`` (validated; the default for objects without one)."""
+    value = getattr(owner, "tally_resolution", DEFAULT_RESOLUTION)
+    try:
+        return _check_resolution(value)
+    except ValueError:
+        raise ValueError(
+            f"`tally_resolution` must be a positive finite number; got {value!r}."
+        ) from None
+
+
 def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: str):
     """Held-out predictions of a frozen binary estimator on Dask rows, as tally rows.
 
@@ -226,8 +243,10 @@ def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: 
     # drawn per block from a generator seeded by their random_state and the block index.
     n_rep = int(owner._dask_replicates()) if hasattr(owner, "_dask_replicates") else 0
     seed = replicate_seed(getattr(owner, "random_state", None)) if n_rep else 0
+    resolution = owner_resolution(owner)
     tally = dask_tally_of_model(
-        estimator, response, X, y, sample_weight, n_replicates=n_rep, seed=seed, stream=0
+        estimator, response, X, y, sample_weight, resolution=resolution, n_replicates=n_rep,
+        seed=seed, stream=0,
     )
     if tally.total_weight <= 0:
         raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
@@ -268,6 +287,7 @@ def unlabelled_proba_from_dask(
     *,
     n_replicates: int = 0,
     random_state: Any = None,
+    resolution: float = DEFAULT_RESOLUTION,
 ):
     """Binary posteriors of unlabelled Dask rows as tally rows: ``(proba (m, 2), weights, tally)``.
 
@@ -282,8 +302,8 @@ def unlabelled_proba_from_dask(
         )
     seed = replicate_seed(random_state) if n_replicates else 0
     tally = dask_tally_of_model(
-        estimator, "predict_proba", X, None, sample_weight, n_replicates=n_replicates,
-        seed=seed, stream=1,
+        estimator, "predict_proba", X, None, sample_weight, resolution=resolution,
+        n_replicates=n_replicates, seed=seed, stream=1,
     )
     if tally.total_weight <= 0:
         raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")

@@ -351,8 +351,8 @@ def _square_terms(block):
     return np.array([w @ square, w.sum()])
 
 
-def _ovr_tallies_block(owner, Xb, yb, wb):
-    from ._tally import DEFAULT_RESOLUTION, _tally_block
+def _ovr_tallies_block(owner, resolution, Xb, yb, wb):
+    from ._tally import _tally_block
 
     values = getattr(owner.estimator_, owner.response_)(Xb)
     scores = owner._to_scores(np.asarray(values, dtype=float))
@@ -360,7 +360,7 @@ def _ovr_tallies_block(owner, Xb, yb, wb):
     y = _label_index(owner.classes_, yb)
     w = _weights(wb, scores.shape[0])
     return [
-        _tally_block(ovr[:, j], (y == j).astype(int), w, 2, DEFAULT_RESOLUTION)
+        _tally_block(ovr[:, j], (y == j).astype(int), w, 2, resolution)
         for j in range(ovr.shape[1])
     ]
 
@@ -378,7 +378,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
 
     from .._heldout import _resolve_response
     from ..calibration._temperature import _LOG_SPAN, TemperatureMap
-    from ._dask import _aligned_blocks, _import_dask, _row_blocks, _tree_merge
+    from ._dask import _aligned_blocks, _import_dask, _row_blocks, _tree_merge, owner_resolution
 
     dask, _ = _import_dask()
     estimator, classes = _frozen_multiclass(owner, y)
@@ -436,7 +436,10 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
             "'temperature' or a binary map (fitted one-vs-rest)."
         )
     make = dask.delayed(_ovr_tallies_block, pure=True)
-    per_block = [make(owner, b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
+    resolution = owner_resolution(owner)
+    per_block = [
+        make(owner, resolution, b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)
+    ]
     pick = dask.delayed(lambda ts, j: ts[j], pure=True)
     merged = dask.compute(
         *[_tree_merge(dask, [pick(t, j) for t in per_block]) for j in range(k)]
