@@ -235,3 +235,19 @@ def test_map_instance_is_cloned(frozen_cancer):
     model = CalibrationWrapper(FrozenEstimator(base), method=template).fit(X, y)
     assert not hasattr(template, "classes_")
     assert model.method_ == "IsotonicMap"
+
+
+def test_auto_leaves_venn_abers_out_on_large_heldout_sets():
+    from sklearn.datasets import make_classification
+
+    X, y = make_classification(22_000, n_features=5, random_state=0)
+    base = LogisticRegression().fit(X[:2000], y[:2000])
+    model = CalibrationWrapper(FrozenEstimator(base), method="auto", random_state=0).fit(X, y)
+    assert "venn_abers" not in model.method_scores_
+    assert {"platt", "isotonic"} <= set(model.method_scores_)
+    small = CalibrationWrapper(FrozenEstimator(base), method="auto", random_state=0)
+    assert "venn_abers" in small.fit(X[:3000], y[:3000]).method_scores_
+    chosen = CalibrationWrapper(
+        FrozenEstimator(base), method="auto", candidates=["platt", "venn_abers"], random_state=0
+    ).fit(X, y)
+    assert set(chosen.method_scores_) == {"platt", "venn_abers"}
