@@ -304,6 +304,14 @@ def test_works_with_matplotlib_blocked(monkeypatch, content):
     assert sorted(figs) == ["cost", "decision_curve", "prevalence", "reliability"]
     for svg in figs.values():
         ET.fromstring(svg)
+    # the whole page through the public entry point, figures from the built-in renderer
+    monkeypatch.setattr(probwrap.report, "make_figures", fresh.builtin_figures)
+    _, html = probwrap.report.build_report(
+        y_true=content.y_true, y_prob=content.y_prob, costs={"fp": 3.0, "fn": 40.0},
+        n_resamples=5,
+    )
+    assert html.count('class="pw-svg-chart"') == 3
+    assert "matplotlib" not in sys.modules or sys.modules["matplotlib"] is None
 
 
 # -- a whole page in headless Chromium --------------------------------------------------------
@@ -376,3 +384,49 @@ def test_page_renders_without_console_errors_and_every_figure_visible(page, tmp_
         w, h = (int(v) for v in size.split("x"))
         assert w > 200 and h > 150, entry
         assert visibility == "visible" and display != "none", entry
+
+
+def test_same_numbers_as_the_matplotlib_displays(content, figures):
+    pytest.importorskip("matplotlib")
+    from probwrap.plot import (
+        CostCurveDisplay,
+        DecisionCurveDisplay,
+        PrevalenceDriftDisplay,
+        ReliabilityDiagram,
+    )
+
+    rel = ReliabilityDiagram.from_predictions(
+        content.y_true, content.y_prob, n_bins=content.n_bins, pos_label=1.0,
+        confidence_level=content.confidence_level,
+    )
+    _, panels = _panels(figures["reliability"])
+    main = _find_panel(panels, "observed")
+    x, y, _ = _polyline_data(main, "observed")
+    np.testing.assert_allclose(x, rel.line_.get_xdata(), atol=TOL, rtol=0)
+    np.testing.assert_allclose(y, rel.line_.get_ydata(), atol=TOL, rtol=0)
+    _, to_y = _axes(main)
+    tops = [float(re.match(r"M\S+ \S+ V(\S+)", p.get("d")).group(1))
+            for p in _series(main, "wilson").findall(f"{SVG}path")]
+    np.testing.assert_allclose(to_y(tops), rel.band_high, atol=TOL, rtol=0)
+    assert f"{rel.calibration_error:.4f}" in ET.fromstring(figures["reliability"]).find(
+        f"{SVG}title").text
+
+    cost = CostCurveDisplay(result=content.cost_curve, plugin_cutoff=content.plugin,
+                            interval=content.cost_interval).plot()
+    cx, cy, _ = _polyline_data(_panels(figures["cost"])[1][0], "curve")
+    keep = np.isfinite(cost.line_.get_ydata())
+    np.testing.assert_allclose(cx, cost.line_.get_xdata()[keep], atol=TOL, rtol=0)
+    np.testing.assert_allclose(cy, cost.line_.get_ydata()[keep], atol=TOL, rtol=0)
+
+    dc = DecisionCurveDisplay.from_predictions(content.y_true, content.y_prob, pos_label=1.0)
+    dpanel = _panels(figures["decision_curve"])[1][0]
+    dx, dy, _ = _polyline_data(dpanel, "model")
+    np.testing.assert_allclose(dx, dc.thresholds, atol=TOL, rtol=0)
+    np.testing.assert_allclose(dy, dc.net_benefit, atol=TOL, rtol=0)
+    ylim = tuple(float(v) for v in dpanel.get("data-ylim").split())
+    np.testing.assert_allclose(ylim, dc.ax_.get_ylim(), atol=1e-12)
+
+    drift = PrevalenceDriftDisplay.from_table(content.batch_table,
+                                              source_prevalence=content.source_prevalence)
+    _, py, _ = _polyline_data(_panels(figures["prevalence"])[1][0], "prevalence")
+    np.testing.assert_allclose(py, drift.prevalence, atol=TOL, rtol=0)
