@@ -430,3 +430,32 @@ def test_same_numbers_as_the_matplotlib_displays(content, figures):
                                               source_prevalence=content.source_prevalence)
     _, py, _ = _polyline_data(_panels(figures["prevalence"])[1][0], "prevalence")
     np.testing.assert_allclose(py, drift.prevalence, atol=TOL, rtol=0)
+
+
+def test_write_report_without_matplotlib_uses_the_builtin_figures(monkeypatch, tmp_path):
+    # A plain `pip install .` has no matplotlib: the report must still carry its figures.
+    for name in [m for m in sys.modules if m == "matplotlib" or m.startswith("matplotlib.")]:
+        monkeypatch.setitem(sys.modules, name, None)
+    monkeypatch.setitem(sys.modules, "matplotlib", None)
+    with pytest.raises(ImportError):
+        import matplotlib  # noqa: F401
+    held = make_parcels(1500, random_state=3)
+    p = held.true_proba[:, 1]
+    out = tmp_path / "report.html"
+    content = probwrap.report.write_report(
+        out, y_true=held.target, y_prob=p, costs={"fp": 3.0, "fn": 40.0}, n_resamples=20,
+        random_state=0,
+    )
+    page = out.read_text()
+    assert page.count("<svg") == 3  # reliability, cost curve, decision curve
+    assert 'id="fig-reliability"' in page and 'id="fig-cost"' in page
+    # the numbers in the table still come from the library
+    assert content.cost_curve.cutoff == pytest.approx(content.chosen_cutoff)
+    three = make_parcels(1500, n_outcomes=3, random_state=4)
+    out3 = tmp_path / "three.html"
+    probwrap.report.write_report(
+        out3, y_true=three.target, y_prob=three.true_proba,
+        costs=[[0, 4, 12], [30, 4, 12], [60, 60, 12]], action_names=["ship", "repack", "hold"],
+        n_resamples=20, random_state=0,
+    )
+    assert out3.read_text().count("<svg") == 1  # the top-label reliability diagram

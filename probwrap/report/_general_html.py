@@ -166,11 +166,12 @@ def _decisions(c: MulticlassReportContent, figures: dict[str, str]) -> str:
            "shares (expected, not realised, cost)." if target else "")
         + "</p>"
     )
-    parts.append(_figure(
-        "fig-actions", figures["actions"],
-        "Share of labelled rows given each action under each rule, with the rule's mean cost "
-        "per row at the right" + (" and the capacity marked." if c.capacity else "."),
-    ))
+    if "actions" in figures:  # drawn with matplotlib only (the plot extra)
+        parts.append(_figure(
+            "fig-actions", figures["actions"],
+            "Share of labelled rows given each action under each rule, with the rule's mean cost "
+            "per row at the right" + (" and the capacity marked." if c.capacity else "."),
+        ))
     parts.append("</section>")
     return "".join(parts)
 
@@ -211,11 +212,12 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         f"<p>Estimated from {c.n_unlabelled or 'the'} unlabelled rows, assuming only the class "
         f"shares changed (prior shift). {verdict}</p>"
     )
-    parts.append(_figure(
-        "fig-class-prior", figures["class_prior"],
-        f"Share of each class in the labelled rows and estimated in the unlabelled rows, with "
-        f"{level} intervals.",
-    ))
+    if "class_prior" in figures:  # drawn with matplotlib only (the plot extra)
+        parts.append(_figure(
+            "fig-class-prior", figures["class_prior"],
+            f"Share of each class in the labelled rows and estimated in the unlabelled rows, with "
+            f"{level} intervals.",
+        ))
     parts.append("</section>")
     return "".join(parts)
 

@@ -315,7 +315,20 @@ def _glance(c: Any) -> str:
 
 
 def make_figures(c: Any) -> dict[str, str]:
-    """Draw every figure of the report and return them as inline SVG strings."""
+    """Draw every figure of the report and return them as inline SVG strings.
+
+    With matplotlib installed (the ``plot`` extra) the figures come from the display objects
+    of :mod:`probwrap.plot`; without it, from the built-in SVG renderer, so that a plain
+    ``pip install .`` still writes a report with its figures (the multiclass report then shows
+    its reliability diagram and tables; the action-share and class-share charts need
+    matplotlib).
+    """
+    try:
+        import matplotlib  # noqa: F401
+    except ImportError:
+        from ._builtin_figures import builtin_figures
+
+        return builtin_figures(c)
     if getattr(c, "kind", "binary") == "general":
         from ._general_html import general_figures
 
