@@ -28,7 +28,7 @@ from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
 from probwrap import CostPolicyWrapper
-from probwrap.datasets import make_parcels
+from probwrap.datasets import make_parcels, parcel_routing_costs
 from probwrap.decision import bayes_actions
 
 ACTIONS = ["ship", "repack", "hold"]
@@ -36,16 +36,7 @@ ACTIONS = ["ship", "repack", "hold"]
 
 def parcel_costs(X: pd.DataFrame) -> np.ndarray:
     """(n, 3 outcomes, 3 actions) costs for each parcel, from its value."""
-    value = X["parcel_value"].to_numpy(dtype=float)
-    out = np.empty((value.shape[0], 3, 3))
-    out[:, 0, :] = [0.0, 4.0, 12.0]  # intact
-    out[:, 1, 0] = 0.3 * value + 5.0  # dented, shipped
-    out[:, 1, 1] = 4.0  # dented, but repacked in time
-    out[:, 1, 2] = 12.0
-    out[:, 2, 0] = value + 8.0  # broken
-    out[:, 2, 1] = value + 12.0
-    out[:, 2, 2] = 12.0
-    return out
+    return parcel_routing_costs(X["parcel_value"].to_numpy(dtype=float))
 
 
 def load(n: int, seed: int) -> tuple[pd.DataFrame, np.ndarray, np.ndarray]:

@@ -103,16 +103,9 @@ def parcel_costs(X) -> np.ndarray:
     >>> parcel_costs(pd.DataFrame({"parcel_value": [100.0]}))[0].tolist()
     [[0.0, 4.0, 12.0], [35.0, 4.0, 12.0], [108.0, 112.0, 12.0]]
     """
-    value = X["parcel_value"].to_numpy(dtype=float)
-    out = np.empty((value.shape[0], 3, 3))
-    out[:, 0, :] = [0.0, 4.0, 12.0]
-    out[:, 1, 0] = 0.3 * value + 5.0
-    out[:, 1, 1] = 4.0
-    out[:, 1, 2] = 12.0
-    out[:, 2, 0] = value + 8.0
-    out[:, 2, 1] = value + 12.0
-    out[:, 2, 2] = 12.0
-    return out
+    from probwrap.datasets import parcel_routing_costs
+
+    return parcel_routing_costs(X["parcel_value"].to_numpy(dtype=float))
 
 
 def _three_way_frame(n: int, seed: int, season: str = "summer"):

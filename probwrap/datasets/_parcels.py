@@ -9,7 +9,13 @@ import numpy as np
 from scipy.special import expit, softmax
 from sklearn.utils import Bunch, check_random_state
 
-__all__ = ["PARCEL_FEATURES", "make_parcels", "parcel_source_prior"]
+__all__ = [
+    "PARCEL_FEATURES",
+    "ROUTING_ACTIONS",
+    "make_parcels",
+    "parcel_routing_costs",
+    "parcel_source_prior",
+]
 
 PARCEL_FEATURES = (
     "weight_kg",
@@ -213,3 +219,44 @@ def make_parcels(
         prior=np.asarray(prior, dtype=float),
         source_prior=source,
     )
+
+
+#: Actions of the three-way variant, in the column order of :func:`parcel_routing_costs`.
+ROUTING_ACTIONS = ("ship", "repack", "hold")
+
+
+def parcel_routing_costs(parcel_value: Any) -> np.ndarray:
+    """Invented per-parcel costs of the three-way variant (ship / repack / hold).
+
+    Rows of each (3, 3) matrix are the outcomes intact / dented / broken, columns the actions.
+    Shipping is free when the parcel arrives intact; a dent costs 30% of the value plus 5 and a
+    break the value plus 8. Repacking (4) prevents dents but not breaks; holding (12) lets
+    nothing leave damaged. Demo values only.
+
+    Parameters
+    ----------
+    parcel_value : array-like of shape (n,)
+        Value of each parcel in currency units (``make_parcels(...).parcel_value``).
+
+    Returns
+    -------
+    ndarray of shape (n, 3, 3)
+
+    Examples
+    --------
+    >>> from probwrap.datasets import parcel_routing_costs
+    >>> parcel_routing_costs([100.0])[0].tolist()
+    [[0.0, 4.0, 12.0], [35.0, 4.0, 12.0], [108.0, 112.0, 12.0]]
+    """
+    value = np.asarray(parcel_value, dtype=float)
+    if value.ndim != 1 or not np.all(np.isfinite(value)) or np.any(value < 0):
+        raise ValueError("`parcel_value` must be a 1-d array of finite, non-negative values.")
+    out = np.empty((value.shape[0], 3, 3))
+    out[:, 0, :] = [0.0, 4.0, 12.0]  # intact
+    out[:, 1, 0] = 0.3 * value + 5.0  # dented, shipped
+    out[:, 1, 1] = 4.0  # dented, but repacked in time
+    out[:, 1, 2] = 12.0
+    out[:, 2, 0] = value + 8.0  # broken
+    out[:, 2, 1] = value + 12.0
+    out[:, 2, 2] = 12.0
+    return out
