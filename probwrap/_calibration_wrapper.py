@@ -13,7 +13,7 @@ from sklearn.model_selection import StratifiedKFold
 from sklearn.utils.metaestimators import available_if
 from sklearn.utils.validation import check_is_fitted
 
-from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask
+from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, _multiclass_dask
 from .calibration._base import CalibrationMap
 from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
@@ -434,15 +434,3 @@ class CalibrationWrapper(HeldOutClassifierBase):
         for k, m in enumerate(self.calibrator_):
             out[:, k, :] = m if isinstance(m, float) else m.predict_interval(ovr[:, k])
         return out
-
-
-def _multiclass_dask(estimator: Any, X: Any, y: Any, sample_weight: Any) -> bool:
-    """Dask input with a frozen estimator of more than two classes."""
-    from sklearn.frozen import FrozenEstimator
-
-    dask_input = _is_dask(X) or _is_dask(y) or _is_dask(sample_weight)
-    return (
-        dask_input
-        and isinstance(estimator, FrozenEstimator)
-        and len(getattr(estimator, "classes_", ())) > 2
-    )

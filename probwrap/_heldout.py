@@ -82,6 +82,17 @@ def _is_dask(obj: Any) -> bool:
     """Whether ``obj`` is a Dask collection (checked without importing Dask)."""
     return hasattr(obj, "__dask_graph__")
 
+def _multiclass_dask(estimator: Any, X: Any, y: Any, sample_weight: Any) -> bool:
+    """Dask input with a frozen estimator of more than two classes."""
+    from sklearn.frozen import FrozenEstimator
+
+    dask_input = _is_dask(X) or _is_dask(y) or _is_dask(sample_weight)
+    return (
+        dask_input
+        and isinstance(estimator, FrozenEstimator)
+        and len(getattr(estimator, "classes_", ())) > 2
+    )
+
 
 def is_frozen(estimator: Any) -> bool:
     """Whether ``estimator`` is an already-fitted :class:`~sklearn.frozen.FrozenEstimator`."""

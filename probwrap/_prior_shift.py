@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 from sklearn.utils.validation import check_is_fitted
 
-from ._heldout import HeldOutClassifierBase, _is_dask
+from ._heldout import HeldOutClassifierBase, _is_dask, _multiclass_dask
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
 from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
 
@@ -426,15 +426,3 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if _is_dask(X):
             return self._dask_predict(self.predict, X, None, self.classes_.dtype)
         return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
-
-
-def _multiclass_dask(estimator: Any, X: Any, y: Any, sample_weight: Any) -> bool:
-    """Dask input with a frozen estimator of more than two classes."""
-    from sklearn.frozen import FrozenEstimator
-
-    dask_input = _is_dask(X) or _is_dask(y) or _is_dask(sample_weight)
-    return (
-        dask_input
-        and isinstance(estimator, FrozenEstimator)
-        and len(getattr(estimator, "classes_", ())) > 2
-    )

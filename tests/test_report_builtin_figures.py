@@ -7,8 +7,6 @@ references elsewhere; the Wilson intervals are also checked against statsmodels.
 
 import importlib
 import re
-import shutil
-import subprocess
 import sys
 import xml.etree.ElementTree as ET
 
@@ -315,35 +313,6 @@ def test_works_with_matplotlib_blocked(monkeypatch, content):
 
 
 # -- a whole page in headless Chromium --------------------------------------------------------
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
-_FLAGS = [
-    "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-    "--disable-background-networking", "--disable-component-update", "--disable-sync",
-    "--hide-scrollbars", "--window-size=1100,4200",
-]
-# measures each figure's <svg> after layout (test copy only; the report carries no script)
-_PROBE = """<script>
-window.addEventListener('load', function () {
-  var out = [];
-  document.querySelectorAll('figure.pw-figure').forEach(function (f) {
-    var s = f.querySelector('svg'); var r = s ? s.getBoundingClientRect() : {width: 0, height: 0};
-    var st = s ? getComputedStyle(s) : {};
-    out.push(f.id + ':' + Math.round(r.width) + 'x' + Math.round(r.height) + ':' +
-             st.visibility + ':' + st.display);
-  });
-  var p = document.createElement('pre'); p.id = 'probe'; p.textContent = out.join(';');
-  document.body.appendChild(p);
-});
-</script>"""
-
-
-def _chromium(args, tmp_path, name):
-    profile = tmp_path / f"profile-{name}"
-    profile.mkdir()
-    return subprocess.run([CHROMIUM, *_FLAGS, f"--user-data-dir={profile}", *args],
-                          capture_output=True, text=True, timeout=90)
-
-
 @pytest.fixture(scope="module")
 def page(content, figures):
     return render_html(content, figures)
@@ -359,20 +328,18 @@ def test_build_report_with_builtin_figures(monkeypatch, content):
     assert "<script" not in html
 
 
-@pytest.mark.skipif(CHROMIUM is None, reason="chromium is not on PATH: install the Debian "
-                    "package 'chromium' to run the built-in figure rendering test")
-def test_page_renders_without_console_errors_and_every_figure_visible(page, tmp_path):
+def test_page_renders_without_console_errors_and_every_figure_visible(page, tmp_path, chromium):
     assert "<script" not in page and page.count('class="pw-svg-chart"') == 4
     path = tmp_path / "report.html"
     path.write_text(page, encoding="utf-8")
-    proc = _chromium(["--enable-logging=stderr", "--v=0", f"--screenshot={tmp_path / 's.png'}",
+    proc = chromium.run(["--enable-logging=stderr", "--v=0", f"--screenshot={tmp_path / 's.png'}",
                       path.as_uri()], tmp_path, "shot")
     assert proc.returncode == 0, proc.stderr[-2000:]
     console = [line for line in proc.stderr.splitlines() if "CONSOLE" in line]
     assert console == [], console
     probed = tmp_path / "probed.html"
-    probed.write_text(page.replace("</body>", _PROBE + "</body>"), encoding="utf-8")
-    proc = _chromium(["--dump-dom", probed.as_uri()], tmp_path, "dom")
+    probed.write_text(page.replace("</body>", chromium.probe + "</body>"), encoding="utf-8")
+    proc = chromium.run(["--dump-dom", probed.as_uri()], tmp_path, "dom")
     assert proc.returncode == 0, proc.stderr[-2000:]
     match = re.search(r'<pre id="probe">([^<]*)</pre>', proc.stdout)
     assert match, proc.stdout[-1000:]

@@ -4,52 +4,12 @@ Skips when ``chromium`` is not on PATH (CI installs the Debian package; see .ci/
 """
 
 import re
-import shutil
-import subprocess
 
 import numpy as np
 import pytest
 
 from probwrap.datasets import make_parcels
 from probwrap.report import write_report
-
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
-pytestmark = pytest.mark.skipif(
-    CHROMIUM is None,
-    reason="chromium is not on PATH: install the Debian package 'chromium' to run the report "
-    "rendering test",
-)
-
-_FLAGS = [
-    "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-    "--disable-background-networking", "--disable-component-update", "--disable-sync",
-    "--hide-scrollbars", "--window-size=1100,4200",
-]
-
-# measures each figure's <svg> after layout and writes the result into the DOM (test copy only;
-# the report itself carries no script)
-_PROBE = """<script>
-window.addEventListener('load', function () {
-  var out = [];
-  document.querySelectorAll('figure.pw-figure').forEach(function (f) {
-    var s = f.querySelector('svg'); var r = s ? s.getBoundingClientRect() : {width: 0, height: 0};
-    var st = s ? getComputedStyle(s) : {};
-    out.push(f.id + ':' + Math.round(r.width) + 'x' + Math.round(r.height) + ':' +
-             st.visibility + ':' + st.display);
-  });
-  var p = document.createElement('pre'); p.id = 'probe'; p.textContent = out.join(';');
-  document.body.appendChild(p);
-});
-</script>"""
-
-
-def _run(args, tmp_path, name):
-    profile = tmp_path / f"profile-{name}"
-    profile.mkdir()
-    return subprocess.run(
-        [CHROMIUM, *_FLAGS, f"--user-data-dir={profile}", *args],
-        capture_output=True, text=True, timeout=90,
-    )
 
 
 @pytest.fixture(scope="module")
@@ -66,9 +26,9 @@ def report_path(tmp_path_factory):
     return path
 
 
-def test_no_console_errors_and_screenshot_not_blank(report_path, tmp_path):
+def test_no_console_errors_and_screenshot_not_blank(report_path, tmp_path, chromium):
     shot = tmp_path / "shot.png"
-    proc = _run(["--enable-logging=stderr", "--v=0", f"--screenshot={shot}",
+    proc = chromium.run(["--enable-logging=stderr", "--v=0", f"--screenshot={shot}",
                  report_path.as_uri()], tmp_path, "shot")
     assert proc.returncode == 0, proc.stderr[-2000:]
     console = [line for line in proc.stderr.splitlines() if "CONSOLE" in line]
@@ -87,12 +47,12 @@ def test_no_console_errors_and_screenshot_not_blank(report_path, tmp_path):
     assert np.sum(np.all(np.abs(flat - teal) <= 12, axis=1)) > 500
 
 
-def test_every_figure_is_laid_out(report_path, tmp_path):
+def test_every_figure_is_laid_out(report_path, tmp_path, chromium):
     page = report_path.read_text(encoding="utf-8")
     assert "<script" not in page
     probed = tmp_path / "probed.html"
-    probed.write_text(page.replace("</body>", _PROBE + "</body>"), encoding="utf-8")
-    proc = _run(["--dump-dom", probed.as_uri()], tmp_path, "dom")
+    probed.write_text(page.replace("</body>", chromium.probe + "</body>"), encoding="utf-8")
+    proc = chromium.run(["--dump-dom", probed.as_uri()], tmp_path, "dom")
     assert proc.returncode == 0, proc.stderr[-2000:]
     match = re.search(r'<pre id="probe">([^<]*)</pre>', proc.stdout)
     assert match, proc.stdout[-1000:]
@@ -121,12 +81,12 @@ def multiclass_report_path(tmp_path_factory):
     return path
 
 
-def test_multiclass_report_renders(multiclass_report_path, tmp_path):
+def test_multiclass_report_renders(multiclass_report_path, tmp_path, chromium):
     page = multiclass_report_path.read_text(encoding="utf-8")
     assert "<script" not in page
     probed = tmp_path / "probed.html"
-    probed.write_text(page.replace("</body>", _PROBE + "</body>"), encoding="utf-8")
-    proc = _run(["--enable-logging=stderr", "--v=0", "--dump-dom", probed.as_uri()], tmp_path,
+    probed.write_text(page.replace("</body>", chromium.probe + "</body>"), encoding="utf-8")
+    proc = chromium.run(["--enable-logging=stderr", "--v=0", "--dump-dom", probed.as_uri()], tmp_path,
                 "mc")
     assert proc.returncode == 0, proc.stderr[-2000:]
     console = [line for line in proc.stderr.splitlines()
