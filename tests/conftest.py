@@ -54,3 +54,16 @@ def chromium():
             "rendering tests"
         )
     return HeadlessChromium(binary)
+
+
+@pytest.fixture(scope="session")
+def client():
+    """One two-worker Dask LocalCluster for the whole run, on loopback only."""
+    distributed = pytest.importorskip("distributed")
+    cluster = distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=False, protocol="tcp", host="127.0.0.1",
+        dashboard_address=None,
+    )
+    with distributed.Client(cluster) as c:
+        yield c
+    cluster.close()

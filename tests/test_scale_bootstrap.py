@@ -120,18 +120,6 @@ def test_tally_prior_interval_covers_like_the_in_memory_bootstrap():
 
 
 @pytest.fixture(scope="module")
-def client():
-    distributed = pytest.importorskip("distributed")
-    cluster = distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=False, protocol="tcp", host="127.0.0.1",
-        dashboard_address=None,
-    )
-    with distributed.Client(cluster) as c:
-        yield c
-    cluster.close()
-
-
-@pytest.fixture(scope="module")
 def model():
     X, y = _data(2000, seed=0)
     return FrozenEstimator(LogisticRegression(C=0.05).fit(X, y))

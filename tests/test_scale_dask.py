@@ -21,17 +21,6 @@ distributed = pytest.importorskip("distributed")
 COSTS = {"fp": 1.0, "fn": 6.0}
 
 
-@pytest.fixture(scope="module")
-def client():
-    cluster = distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=False, protocol="tcp", host="127.0.0.1",
-        dashboard_address=None,
-    )
-    with distributed.Client(cluster) as c:
-        yield c
-    cluster.close()
-
-
 def _data(n, seed, shift=0.0):
     rng = np.random.default_rng(seed)
     X = rng.normal(size=(n, 3)) + shift

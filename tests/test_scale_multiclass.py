@@ -14,17 +14,6 @@ da = pytest.importorskip("dask.array")
 distributed = pytest.importorskip("distributed")
 
 
-@pytest.fixture(scope="module")
-def client():
-    cluster = distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=False, protocol="tcp", host="127.0.0.1",
-        dashboard_address=None,
-    )
-    with distributed.Client(cluster) as c:
-        yield c
-    cluster.close()
-
-
 def _data(n, seed, prior):
     rng = np.random.default_rng(seed)
     y = rng.choice(3, size=n, p=prior)
