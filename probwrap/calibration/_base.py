@@ -14,6 +14,7 @@ from .._validation import (
     check_same_length,
     check_sample_weight,
     check_scores,
+    plain,
 )
 
 __all__ = ["CalibrationMap", "NONPARAMETRIC"]
@@ -70,6 +71,12 @@ class CalibrationMap(BaseEstimator):
         w = check_sample_weight(sample_weight, s.shape[0])
         if s.ndim == 1:
             y01, classes = check_binary_labels(y, name="y")
+            for k in (0, 1):
+                if not np.any(w[y01 == k] > 0):
+                    raise ValueError(
+                        f"`sample_weight` is zero for every row of class {plain(classes[k])!r}; "
+                        "each of the two classes needs some positive weight."
+                    )
             self.classes_ = classes
             self.n_classes_ = 2
             self.n_score_columns_ = 1
@@ -104,9 +111,19 @@ class CalibrationMap(BaseEstimator):
         s = self._check_scores(scores, fitting=False)
         out = np.asarray(self._predict(s), dtype=float)
         if out.ndim == 1:
-            return np.clip(out, 0.0, 1.0)
-        out = np.clip(out, 0.0, None)
-        return out / out.sum(axis=1, keepdims=True)
+            out = np.clip(out, 0.0, 1.0)
+        else:
+            out = np.clip(out, 0.0, None)
+            out = out / out.sum(axis=1, keepdims=True)
+        if not np.all(np.isfinite(out)):
+            # never hand out a NaN or infinite probability; the maps guard against it, so this
+            # means the fitted attributes were damaged
+            raise ValueError(
+                f"{type(self).__name__} produced non-finite probabilities for "
+                f"{int(np.count_nonzero(~np.isfinite(out)))} value(s) of `scores`; its fitted "
+                "attributes are not usable."
+            )
+        return out
 
     # -- helpers ---------------------------------------------------------------------------
     def _check_scores(self, scores: Any, *, fitting: bool) -> np.ndarray:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.optimize import isotonic_regression
 
+from .._validation import power_of_two_unit
 from ._base import NONPARAMETRIC, CalibrationMap
 
 __all__ = ["IsotonicMap"]
@@ -98,6 +99,9 @@ class IsotonicMap(CalibrationMap):
         pass
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
+        # the fit is a weighted mean per block, unchanged by scaling every weight; a power of two
+        # (exact) keeps the block sums finite for weights near the largest double
+        w = w / power_of_two_unit(w)
         distinct, weight, label_sum = _pool_ties(scores, y, w, unit_weight_as_none=True)
         self.thresholds_ = distinct
         # The pooling pass itself is SciPy's compiled weighted PAV (scipy.optimize, since 1.12):
@@ -109,4 +113,38 @@ class IsotonicMap(CalibrationMap):
         self.values_ = np.clip(fit.x, 0.0, 1.0)
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
-        return np.interp(scores, self.thresholds_, self.values_)
+        return _interpolate(scores, self.thresholds_, self.values_)
+
+
+def _interpolate(x: np.ndarray, xp: np.ndarray, fp: np.ndarray) -> np.ndarray:
+    """``np.interp``, made exact where its slope ``(f1 - f0) / (x1 - x0)`` is not finite.
+
+    Across a gap of denormal width the slope overflows (``np.interp`` then returns 1.0 where
+    ~5e-14 is right), and across a gap wider than the largest double the difference does. There
+    the value is computed as ``f0 + t (f1 - f0)`` with the fraction ``t = (x - x0) / (x1 - x0)``
+    (of halves when the gap overflows).
+    """
+    out = np.interp(x, xp, fp)
+    if xp.shape[0] < 2:
+        return out
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+        dx = np.diff(xp)
+        bad_segment = ~np.isfinite(np.diff(fp) / dx) | ~np.isfinite(dx)
+    if not bad_segment.any():
+        return out
+    seg = np.searchsorted(xp, x, side="right") - 1  # xp[seg] <= x < xp[seg + 1]
+    inside = (seg >= 0) & (seg < xp.shape[0] - 1)
+    redo = np.flatnonzero(inside)[bad_segment[seg[inside]]]
+    if redo.size:
+        j = seg[redo]
+        x0, x1, xv = xp[j], xp[j + 1], x[redo]
+        with np.errstate(over="ignore", invalid="ignore"):
+            gap = x1 - x0
+            t = np.where(
+                np.isfinite(gap),
+                (xv - x0) / gap,
+                (0.5 * xv - 0.5 * x0) / (0.5 * x1 - 0.5 * x0),
+            )
+        t = np.clip(t, 0.0, 1.0)
+        out[redo] = fp[j] + t * (fp[j + 1] - fp[j])
+    return out

@@ -8,6 +8,7 @@ import numpy as np
 from scipy.special import expit
 from sklearn.exceptions import ConvergenceWarning
 
+from .._validation import plain, power_of_two_unit
 from ._base import CalibrationMap
 
 __all__ = ["PlattMap"]
@@ -31,10 +32,16 @@ def _weighted_logistic(
     Returns ``(coef, intercept, converged)`` on the original scale of ``X``.
     """
     n, d = X.shape
-    wn = w / w.sum()
+    # Powers of two (exact): the weights only enter as a weighted mean, and each column is
+    # standardised anyway; this keeps sums and squares finite near the largest double.
+    wn = w / power_of_two_unit(w)
+    wn = wn / wn.sum()
+    units = np.array([power_of_two_unit(X[:, j]) for j in range(d)])
+    X = X / units
     mu = wn @ X
     sd = np.sqrt(wn @ (X - mu) ** 2)
-    keep = sd > 1e-12 * np.maximum(1.0, np.abs(mu))
+    with np.errstate(over="ignore"):  # (on the original scale; inf compares correctly)
+        keep = sd * units > 1e-12 * np.maximum(1.0, np.abs(mu * units))
     Z = (X[:, keep] - mu[keep]) / sd[keep]
     A = np.column_stack([np.ones(n), Z])
     theta = np.zeros(A.shape[1])
@@ -68,7 +75,7 @@ def _weighted_logistic(
     coef = np.zeros(d)
     coef[keep] = theta[1:] / sd[keep]
     intercept = float(theta[0] - coef @ mu)
-    return coef, intercept, converged
+    return coef / units, intercept, converged
 
 
 def _separated(s: np.ndarray, y: np.ndarray, w: np.ndarray) -> bool:
@@ -139,11 +146,15 @@ class PlattMap(CalibrationMap):
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         if not isinstance(self.smooth_targets, (bool, np.bool_)):
-            raise ValueError(f"`smooth_targets` must be True or False; got {self.smooth_targets!r}.")
+            raise ValueError(f"`smooth_targets` must be True or False; got {plain(self.smooth_targets)!r}.")
         if self.smooth_targets:
-            n_pos = float(w @ y)
-            n_neg = float(w @ (1.0 - y))
-            t = np.where(y == 1, (n_pos + 1.0) / (n_pos + 2.0), 1.0 / (n_neg + 2.0))
+            unit = power_of_two_unit(w)
+            with np.errstate(over="ignore"):  # class weights beyond the largest double: inf
+                n_pos = float((w / unit) @ y) * unit
+                n_neg = float((w / unit) @ (1.0 - y)) * unit
+            # (N + 1) / (N + 2) is 1 to double precision long before N overflows
+            t_pos = (n_pos + 1.0) / (n_pos + 2.0) if np.isfinite(n_pos) else 1.0
+            t = np.where(y == 1, t_pos, 1.0 / (n_neg + 2.0))
         else:
             t = y
             if _separated(scores, y, w):
@@ -165,4 +176,5 @@ class PlattMap(CalibrationMap):
         self.intercept_ = float(intercept)
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
-        return expit(self.slope_ * scores + self.intercept_)
+        with np.errstate(over="ignore"):  # slope * score beyond the largest double saturates
+            return expit(self.slope_ * scores + self.intercept_)
