@@ -14,7 +14,13 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_same_length, check_sample_weight, check_scores, power_of_two_unit
+from .._validation import (
+    check_same_length,
+    check_sample_weight,
+    check_scores,
+    plain,
+    power_of_two_unit,
+)
 from ._costs import _resolve_costs
 
 __all__ = [
@@ -102,9 +108,9 @@ def check_capacity(capacity: Any, *, name: str = "capacity") -> float | None:
     try:
         value = float(capacity)
     except (TypeError, ValueError) as exc:
-        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {capacity!r}.") from exc
+        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {plain(capacity)!r}.") from exc
     if isinstance(capacity, bool) or not (0.0 < value <= 1.0):
-        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {capacity!r}.")
+        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {plain(capacity)!r}.")
     return value
 
 
@@ -115,10 +121,10 @@ def _check_bounds(score_bounds: Any) -> tuple[float, float] | None:
         lo, hi = (float(v) for v in score_bounds)
     except (TypeError, ValueError) as exc:
         raise ValueError(
-            f"`score_bounds` must be a pair (low, high) of numbers; got {score_bounds!r}."
+            f"`score_bounds` must be a pair (low, high) of numbers; got {plain(score_bounds)!r}."
         ) from exc
     if not lo < hi:
-        raise ValueError(f"`score_bounds` must satisfy low < high; got {score_bounds!r}.")
+        raise ValueError(f"`score_bounds` must satisfy low < high; got {plain(score_bounds)!r}.")
     return lo, hi
 
 
@@ -129,9 +135,11 @@ def _binary_targets(y: Any, n: int) -> np.ndarray:
     if arr.dtype.kind == "b":
         arr = arr.astype(np.int8)
     if arr.dtype.kind not in "iuf" or not np.all((arr == 0) | (arr == 1)):
+        # (a set, not np.unique: labels of mixed types cannot be sorted)
+        seen = sorted({repr(plain(v)) for v in arr.tolist()})[:5]
         raise ValueError(
             "`y` must hold binary targets coded 0 (negative) and 1 (positive); got values "
-            f"{np.unique(arr)[:5].tolist()}."
+            f"{', '.join(seen)}."
         )
     return arr.astype(np.intp)
 
@@ -469,9 +477,9 @@ def cutoff_interval(
     cap = check_capacity(capacity)
     bounds = _check_bounds(score_bounds)
     if int(n_resamples) < 1:
-        raise ValueError(f"`n_resamples` must be a positive integer; got {n_resamples!r}.")
+        raise ValueError(f"`n_resamples` must be a positive integer; got {plain(n_resamples)!r}.")
     if not 0.0 < float(confidence_level) < 1.0:
-        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {plain(confidence_level)!r}.")
     from sklearn.utils import check_random_state
 
     rng = check_random_state(random_state)
