@@ -280,7 +280,9 @@ def _pick_optimum(
         c = np.where(admissible, cost, np.inf)
         scale = float(np.max(np.abs(cost[admissible])))
     best = c.min()
-    tol = 1e-9 * max(scale, 1e-300)
+    # relative tie tolerance; no absolute floor, which would tie genuinely different costs when
+    # all costs are tiny (costs of 1e-300, or a large cost matrix whose big entries never apply)
+    tol = 1e-9 * scale
     opt = np.flatnonzero(c <= best + tol)
     breaks = np.flatnonzero(np.diff(opt) > 1)
     starts = opt[np.concatenate([[0], breaks + 1])]
