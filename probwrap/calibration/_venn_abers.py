@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
@@ -172,10 +173,14 @@ class VennAbersMap(CalibrationMap):
         pass
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
-        # Weights near the largest double would overflow the cumulative sums: divide them (and
-        # the test point's unit weight with them) by a power of two, which changes no slope.
-        # Small weights are left alone (the test point's weight would overflow instead).
-        unit = max(power_of_two_unit(w), 1.0)
+        # The convex-hull tests multiply differences of cumulative weights, which overflow once
+        # the total weight passes ~1e154. Above 2**500 (a total bound by n times the largest
+        # weight), weights and the test point's unit weight are divided by one power of two
+        # that brings the total down to about 2**500: no slope changes, squares stay finite,
+        # and weights up to ~2**-500 of the total stay clear of underflow. Ordinary weights are
+        # not touched.
+        top = math.frexp(power_of_two_unit(w))[1] + math.ceil(math.log2(w.shape[0])) + 1
+        unit = math.ldexp(1.0, max(0, top - 500))  # (exponents: 2**top bounds the total)
         distinct, weight, label_sum = _pool_ties(scores, y, w / unit)
         m = distinct.shape[0]
         cx = np.concatenate([[0.0], np.cumsum(weight)])

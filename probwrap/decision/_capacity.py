@@ -130,9 +130,10 @@ def fit_action_budget(
     unit, Eu = 1.0, E
     with np.errstate(over="ignore"):
         saving = np.delete(E, a, axis=1).min(axis=1) - E[:, a]
-    if not np.all(np.isfinite(saving)):
-        # differences of costs near the largest double overflow; the ranks of the savings do
-        # not change when all costs are divided by one power of two (exact)
+    if not np.all(np.abs(saving) < 2.0**1000):
+        # differences of costs near the largest double overflow (and cut-offs between savings
+        # that large can too); the ranks of the savings do not change when all costs are
+        # divided by one power of two (exact)
         unit = power_of_two_unit(E)
         Eu = E / unit
         saving = np.delete(Eu, a, axis=1).min(axis=1) - Eu[:, a]
@@ -148,4 +149,8 @@ def fit_action_budget(
     j = int(np.argmax(share <= cap * (1 + 1e-12)))
     # rows saving at least the threshold keep the action: it must lie in (lower, upper]
     threshold = rows.mid[j] if rows.mid[j] > rows.lower[j] else rows.upper[j]
-    return ActionBudget(a, cap, float(threshold * unit), float(share[j]), True)
+    with np.errstate(over="ignore"):
+        # +inf when no double lies above the savings to keep out (savings at the top of the
+        # range): then no row keeps the action, as intended
+        threshold = float(threshold * unit)
+    return ActionBudget(a, cap, threshold, float(share[j]), True)

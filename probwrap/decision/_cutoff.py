@@ -161,7 +161,8 @@ def _beyond(x: float, step: float, direction: float) -> float:
         for cand in (x + direction * step, x + direction * max(abs(x), 1.0)):
             if np.isfinite(cand) and (cand - x) * direction > 0:
                 return float(cand)
-    return float(np.nextafter(x, direction * np.inf))
+    with np.errstate(over="ignore"):  # beyond the largest double: +-inf is the only choice
+        return float(np.nextafter(x, direction * np.inf))
 
 
 class _SortedRows:
@@ -372,7 +373,12 @@ def search_cutoff(
     res = _search_rows(
         s, _RowCosts(matrix, yi, w), check_capacity(capacity), _check_bounds(score_bounds)
     )
-    return replace(res, cost=res.cost * unit, costs=res.costs * unit)
+    # mean costs never exceed the largest cost entry; scaling back can pass the largest double
+    # only by rounding (a mean of costs at the top of the range)
+    big = np.finfo(float).max
+    with np.errstate(over="ignore"):
+        costs_back = np.clip(res.costs * unit, -big, big)
+    return replace(res, cost=float(np.clip(res.cost * unit, -big, big)), costs=costs_back)
 
 
 def _search_rows(s, row_costs: _RowCosts, cap, bounds) -> CutoffSearchResult:
