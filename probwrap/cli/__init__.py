@@ -14,7 +14,7 @@ import importlib
 import signal
 import sys
 
-from ._common import OPTIONAL_MODULES, DataError, missing_extra_message
+from ._common import OPTIONAL_MODULES, DataError, clean, missing_extra_message
 
 __all__ = ["main", "DataError"]
 
@@ -65,7 +65,8 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(args.func(args) or 0)
     except DataError as exc:
-        print(f"probwrap {args.verb}: error: {' '.join(str(exc).split())}", file=sys.stderr)
+        print(f"probwrap {args.verb}: error: {clean(' '.join(str(exc).split()))}",
+              file=sys.stderr)
         return 1
     except ModuleNotFoundError as exc:
         root = (exc.name or "").split(".")[0]
@@ -74,10 +75,12 @@ def main(argv: list[str] | None = None) -> int:
         print(f"probwrap {args.verb}: error: {missing_extra_message(root)}", file=sys.stderr)
         return 1
     except KeyboardInterrupt:
-        print(f"probwrap {args.verb}: interrupted; no output file was changed", file=sys.stderr)
+        print(f"probwrap {args.verb}: interrupted; files are replaced only when complete, so "
+              "no output was left half-written", file=sys.stderr)
         return 130
     except _Terminated:
-        print(f"probwrap {args.verb}: terminated; no output file was changed", file=sys.stderr)
+        print(f"probwrap {args.verb}: terminated; files are replaced only when complete, so "
+              "no output was left half-written", file=sys.stderr)
         return 143
     finally:
         if previous is not None:

@@ -75,7 +75,7 @@ def report_warnings(verb: str, caught: list) -> None:
     """Print each distinct library warning once, on one line of stderr (no source lines)."""
     seen: set[str] = set()
     for w in caught:
-        message = " ".join(str(w.message).split())
+        message = clean(" ".join(str(w.message).split()))
         if message not in seen:
             seen.add(message)
             print(f"probwrap {verb}: warning: {message}", file=sys.stderr)

@@ -10,6 +10,7 @@ import argparse
 import contextlib
 import importlib
 import os
+import re
 import sys
 import tempfile
 import threading
@@ -39,7 +40,7 @@ class MissingExtraError(DataError):
 
 #: optional modules the command line may need, and the extra of ``pyproject.toml`` holding each
 OPTIONAL_MODULES = {
-    "pandas": "cli", "pyarrow": "cli", "tqdm": "cli", "skops": "cli", "matplotlib": "cli",
+    "pandas": "cli", "pyarrow": "cli", "tqdm": "cli", "matplotlib": "cli",
     "dask": "dask", "distributed": "dask",
 }
 
@@ -95,8 +96,18 @@ def shown(value: Any) -> str:
     return f"'{clean(str(value))}'"
 
 
+_NUMPY_REPR = re.compile(r"np\.(?:float|int|uint|complex|bool_?|str_)\d*\(([^()]*)\)")
+
+
 def clean(text: str) -> str:
-    """``text`` with every control or other non-printable character shown as an escape."""
+    """``text`` for a one-line message: control characters escaped, NumPy reprs plain.
+
+    Examples
+    --------
+    >>> print(clean("got np.float64(nan) in\\nrow"))
+    got nan in\\nrow
+    """
+    text = _NUMPY_REPR.sub(r"\1", text)
     return "".join(
         ch if ch.isprintable() else ch.encode("unicode_escape").decode("ascii") for ch in text
     )
@@ -274,8 +285,8 @@ def read_labels(
         a, b = sorted(str(v) for v in distinct)
         raise DataError(
             f"{path}: column {shown(column)} holds the labels {shown(a)} and {shown(b)}, not 0/1; "
-            f"say which one is the positive class with --positive-label (e.g. --positive-label "
-            f"{b})"
+            f"say which one is the positive class (the class the scores are the probability of) "
+            f"with --positive-label {clean(a)} or --positive-label {clean(b)}"
         )
     pos = distinct[pos_index]
     neg = distinct[1 - pos_index]
@@ -287,7 +298,7 @@ def read_labels(
 # -- messages ------------------------------------------------------------------------------------
 def warn_line(verb: str, message: str) -> None:
     """One warning line on stderr: ``probwrap VERB: warning: ...``."""
-    print(f"probwrap {verb}: warning: {' '.join(message.split())}", file=sys.stderr)
+    print(f"probwrap {verb}: warning: {clean(' '.join(message.split()))}", file=sys.stderr)
 
 
 def check_ranking(

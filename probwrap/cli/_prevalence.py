@@ -86,6 +86,11 @@ def prevalence_from_source(
     src = np.array([1.0 - source_prevalence, source_prevalence])
     point = em_prior(p2, src)
     test = shift_test(p2, src)
+    if not (np.all(np.isfinite(point.prior)) and np.isfinite(test.statistic)):
+        raise ValueError(
+            f"with source prevalence {source_prevalence:g} the estimate is not a finite number; "
+            "give a source prevalence the scores were really calibrated for"
+        )
     out = _result(point.prior[1], point.converged, "em", proba.shape[0], source_prevalence, test)
     if n_resamples > 0:
         rng = check_random_state(seed)
