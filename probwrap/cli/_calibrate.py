@@ -27,6 +27,7 @@ from ._common import (
     check_out_suffix,
     check_ranking,
     check_row_count,
+    check_writable,
     clean,
     numeric_column,
     probability_column,
@@ -305,6 +306,7 @@ def register(subparsers: Any) -> None:
 
     def run_fit(args: argparse.Namespace) -> int:
         check_out_suffix(fit, args.out, (".json",))
+        check_writable(args.out)
         return _fit(args)
 
     fit.set_defaults(func=run_fit)
@@ -333,6 +335,7 @@ def register(subparsers: Any) -> None:
 
     def run_apply(args: argparse.Namespace) -> int:
         check_out_suffix(apply, args.out, TABLE_SUFFIXES)
+        check_writable(args.out)
         return _apply(args)
 
     apply.set_defaults(func=run_apply)

@@ -24,7 +24,7 @@ import numpy as np
 __all__ = [
     "DataError", "MissingExtraError", "OPTIONAL_MODULES", "require", "shown", "clean", "read_table",
     "numeric_column", "read_labels", "write_atomic", "write_table", "write_text",
-    "check_out_suffix", "TABLE_SUFFIXES", "progress", "Stages", "warn_line", "check_ranking",
+    "check_out_suffix", "check_writable", "TABLE_SUFFIXES", "progress", "Stages", "warn_line", "check_ranking",
     "check_row_count", "FEW_ROWS", "MIN_RESAMPLES", "add_positive_label_flag",
     "add_format_flag", "add_resamples_flag", "whole_number",
 ]
@@ -354,6 +354,30 @@ def _prepare_folder(path: Path) -> None:
         raise DataError(
             f"{path}: the folder {path.parent} cannot be created ({exc.strerror or exc})"
         ) from None
+
+
+def check_writable(path: str | Path, *, folder: bool = False) -> None:
+    """Fail early (before any long computation) when ``path`` cannot be written.
+
+    ``folder=True``: ``path`` is a folder to write into (created when missing).
+    """
+    path = Path(path)
+    if folder:
+        if path.exists() and not path.is_dir():
+            raise DataError(f"{path}: is a file; --out names a folder")
+        target_dir = path
+    else:
+        if path.is_dir():
+            raise DataError(f"{path}: is a folder; give a file name")
+        target_dir = path.parent
+    try:
+        target_dir.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise DataError(
+            f"{path}: the folder {target_dir} cannot be created ({exc.strerror or exc})"
+        ) from None
+    if not os.access(target_dir, os.W_OK | os.X_OK):
+        raise DataError(f"{path}: cannot be written (the folder {target_dir} is read-only)")
 
 
 def write_atomic(path: str | Path, write: Callable[[Path], None]) -> None:

@@ -8,7 +8,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ._common import DataError, Stages, require, whole_number, write_text
+from ._common import DataError, Stages, check_writable, require, whole_number, write_text
 
 __all__ = ["register", "run_demo", "run_three_way_demo", "parcel_costs"]
 
@@ -199,6 +199,7 @@ def run_three_way_demo(
 
 def _three_way_handler(args: argparse.Namespace) -> int:
     start = time.perf_counter()
+    check_writable(args.out, folder=True)
     with Stages("demo", DEMO_STEPS["three-way"]) as stages:
         result = run_three_way_demo(args.out, n_train=args.n_train, seed=args.seed,
                                     stages=stages)
@@ -231,6 +232,7 @@ def _handler(args: argparse.Namespace) -> int:
     if getattr(args, "variant", "damage") == "three-way":
         return _three_way_handler(args)
     start = time.perf_counter()
+    check_writable(args.out, folder=True)
     with Stages("demo", DEMO_STEPS["damage"]) as stages:
         result = run_demo(args.out, n_train=args.n_train, seed=args.seed, stages=stages)
     c = result["content"]

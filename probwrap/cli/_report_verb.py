@@ -20,6 +20,7 @@ from ._common import (
     check_out_suffix,
     check_ranking,
     check_row_count,
+    check_writable,
     clean,
     numeric_column,
     probability_column,
@@ -145,6 +146,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         parser.error("--class-columns take probabilities; --scale log-odds is for binary files")
     if args.capacity is not None and not 0 < args.capacity <= 1:
         parser.error(f"--capacity must be a share in (0, 1]; got {args.capacity:g}")
+    check_writable(args.out)
     matrix = None if args.cost_matrix is None else _cost_matrix(args.cost_matrix, parser)
     if matrix is not None and matrix.shape[0] != len(columns):
         parser.error(f"--cost-matrix has {matrix.shape[0]} rows but --class-columns names "
@@ -286,6 +288,7 @@ def _handler(args: argparse.Namespace) -> int:
     if args.batch_size is not None and args.unlabelled is None:
         parser.error("--batch-size needs --unlabelled")
 
+    check_writable(args.out)
     costs = None
     if given:
         costs = {"fp": args.cost_fp, "fn": args.cost_fn, "tp": args.cost_tp,
