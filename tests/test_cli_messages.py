@@ -303,3 +303,38 @@ def test_demo_same_seed_same_output(tmp_path):
     second = _demo(tmp_path, "b", 5)
     assert first[0] == second[0]
     assert first[1] == second[1]
+
+
+# -- progress ------------------------------------------------------------------------------------
+def test_progress_off_a_terminal_prints_plain_lines_for_long_steps(monkeypatch, capsys):
+    import time
+
+    import probwrap.cli._common as common
+
+    monkeypatch.setattr(common, "_terminal", lambda: False)
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 0.2)
+    with common.Stages("demo", ["quick", "long"]) as stages:
+        stages.start("quick")
+        stages.start("long")
+        stages.detail("bootstrap", 3, 10)
+        time.sleep(1.2)
+    err = capsys.readouterr().err
+    assert "probwrap demo: step 2/2: long: bootstrap 3/10" in err
+    assert "quick" not in err  # a quick step prints nothing
+    assert all(line.startswith("probwrap demo: step") for line in err.splitlines())
+
+
+def test_progress_on_a_terminal_counts_steps_to_the_end(monkeypatch, capsys):
+    import time
+
+    import probwrap.cli._common as common
+
+    monkeypatch.setattr(common, "_terminal", lambda: True)
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 0.0)
+    with common.Stages("demo", ["one", "two", "three"]) as stages:
+        for name in ("one", "two", "three"):
+            stages.start(name)
+            time.sleep(0.6)
+    err = capsys.readouterr().err
+    assert "demo: two" in err and "1/3 steps" in err and "3/3 steps" in err
+    assert "<" not in err.split("3/3 steps")[0].rsplit("\r", 1)[-1]  # no ETA shown

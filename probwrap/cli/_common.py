@@ -550,6 +550,7 @@ class Stages:
         self._bar = None
         self._thread: threading.Thread | None = None
         self._printed_at: float | None = None
+        self._detail: str | None = None
 
     def __enter__(self) -> Stages:
         if _terminal():
@@ -575,10 +576,25 @@ class Stages:
                 if self._bar is not None:
                     self._bar.update(1)
             self.current = name
+            self._detail = None
             self._since = time.monotonic()
             self._printed_at = None
             if self._bar is not None:
                 self._bar.set_description_str(f"{self.verb}: {name}", refresh=False)
+
+    def detail(self, step: str, done: int | None = None, total: int | None = None) -> None:
+        """Name the part of the running step that is in progress (e.g. a report's section).
+
+        Has the signature of the ``progress`` callbacks of the library
+        (``progress(step, done, total)``), so it can be passed to them directly.
+        """
+        with self._lock:
+            count = f" {done}/{total}" if done is not None and total else ""
+            self._detail = f"{step}{count}"
+            if self._bar is not None and self.current is not None:
+                self._bar.set_description_str(
+                    f"{self.verb}: {self.current}: {self._detail}", refresh=False
+                )
 
     def _tick(self) -> None:
         while not self._stop.wait(0.5):
@@ -592,9 +608,10 @@ class Stages:
                 if now - self._since < PROGRESS_DELAY:
                     continue
                 if self._printed_at is None or now - self._printed_at >= 30.0:
+                    detail = f": {self._detail}" if self._detail else ""
                     print(
                         f"probwrap {self.verb}: step {self.done + 1}/{len(self.names)}: "
-                        f"{self.current} ({now - self._since:.0f} s)",
+                        f"{self.current}{detail} ({now - self._since:.0f} s)",
                         file=sys.stderr, flush=True,
                     )
                     self._printed_at = now

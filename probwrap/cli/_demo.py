@@ -91,6 +91,7 @@ def run_demo(
     shift.adapt(winter.data)
     step("computing the report")
     content, page = build_report(
+        **_report_progress(stages),
         model=policy, X=test.data, y=test.target,
         X_unlabelled=winter.data, prior_shift=shift, batch_size=max(len(winter.target) // 5, 1),
         n_resamples=100, random_state=seed,
@@ -105,6 +106,15 @@ def run_demo(
         "rules": rules,
         "report": target,
     }
+
+
+def _report_progress(stages: Stages | None) -> dict:
+    """``progress=stages.detail`` where the report accepts a progress callback."""
+    from ._report_verb import _collect_parameters
+
+    if stages is None or "progress" not in _collect_parameters():
+        return {}
+    return {"progress": stages.detail}
 
 
 class _NoStages:
@@ -183,6 +193,7 @@ def run_three_way_demo(
     shift.adapt(Xw)
     step("computing the report")
     content, page = build_report(
+        **_report_progress(stages),
         model=policy, X=Xt, y=yt, X_unlabelled=Xw, prior_shift=shift,
         class_names=summer.target_names, n_resamples=100, random_state=seed,
         title="Parcels: ship, repack or hold (invented demo data)",

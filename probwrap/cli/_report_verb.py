@@ -244,6 +244,8 @@ def _build_and_write(args: argparse.Namespace, stages: Stages, **inputs):
     from probwrap.report import build_report
 
     stages.start("computing the report")
+    if "progress" in _collect_parameters():
+        inputs["progress"] = stages.detail
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
@@ -258,6 +260,15 @@ def _build_and_write(args: argparse.Namespace, stages: Stages, **inputs):
     stages.start("writing")
     write_text(args.out, page)
     return content
+
+
+def _collect_parameters() -> set[str]:
+    """Keyword arguments the report accepts (a progress callback where available)."""
+    import inspect
+
+    from probwrap.report import write_report
+
+    return set(inspect.signature(write_report).parameters)
 
 
 def _print_summary(args: argparse.Namespace, line: str, summary: dict) -> None:
