@@ -266,9 +266,9 @@ def _collect_parameters() -> set[str]:
     """Keyword arguments the report accepts (a progress callback where available)."""
     import inspect
 
-    from probwrap.report import write_report
+    from probwrap.report._content import collect_content  # what build_report calls
 
-    return set(inspect.signature(write_report).parameters)
+    return set(inspect.signature(collect_content).parameters)
 
 
 def _print_summary(args: argparse.Namespace, line: str, summary: dict) -> None:
