@@ -177,10 +177,10 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
     """A saved map, its description and the scale of the scores it takes.
 
     ``scale`` (the ``--scale`` flag of ``apply``) is used when the file does not record the
-    scale (``metadata.score_scale``); when both are given they must agree. Any problem is a
-    DataError naming the file.
+    scale (field ``score_scale``; ``metadata.score_scale`` in version 1 files); when both are
+    given they must agree. Any problem is a DataError naming the file.
     """
-    from probwrap.calibration import map_from_dict
+    from probwrap.calibration import map_from_dict, map_score_scale
     from probwrap.calibration._serialize import MAP_FORMAT
 
     path = Path(path)
@@ -206,33 +206,26 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
     metadata = description.get("metadata", {})
     if not isinstance(metadata, dict):
         raise DataError(f"{path}: not a usable probwrap map: field 'metadata' must be an object")
-    stored = metadata.get("score_scale")
-    if stored is not None and stored not in SCALES:
-        raise DataError(
-            f"{path}: not a usable probwrap map: field 'metadata.score_scale' must be one of "
-            f"{', '.join(SCALES)}; got {shown(stored)}"
-        )
+    stored = description.get("score_scale", metadata.get("score_scale"))
     if stored is None and scale is None:
         raise DataError(
-            f"{path}: the map file does not record the scale of its scores "
-            "(metadata.score_scale); say it with --scale proba or --scale log-odds"
+            f"{path}: the map file does not record the scale of its scores (field "
+            "'score_scale'); say it with --scale proba or --scale log-odds"
         )
-    if stored is not None and scale is not None and stored != scale:
+    if stored in SCALES and scale is not None and stored != scale:
         raise DataError(
             f"{path}: the map was fitted on {stored} scores but --scale says {scale}"
         )
-    used = stored or scale
-    if stored is None:
-        description = {**description, "metadata": {**metadata, "score_scale": used}}
     try:
-        cal_map = map_from_dict(description)
+        used = map_score_scale(description, score_scale=scale)
+        cal_map = map_from_dict(description, score_scale=scale)
     except (ValueError, TypeError, KeyError) as exc:
         raise DataError(f"{path}: not a usable probwrap map: {clean(str(exc))}") from None
     except RecursionError:
         raise DataError(f"{path}: not a probwrap map (nested too deeply)") from None
     if cal_map.n_score_columns_ != 1:
         raise DataError(f"{path}: the map is multiclass; score files here hold one binary score")
-    return cal_map, description, used
+    return cal_map, dict(description), used
 
 
 def _apply(args: argparse.Namespace) -> int:
