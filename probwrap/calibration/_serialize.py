@@ -46,17 +46,39 @@ MAP_FORMAT = "probwrap-map"
 MAP_SCHEMA_VERSION = 1
 
 #: method name -> (map class, constructor settings, fitted attributes with their kind).
-#: Kinds: "float" (a finite number), "int", "array" (a 1-d list of finite numbers).
+#: Kinds: "float" (a finite number), "int", "array" (a 1-d list of finite numbers), "floor" (the
+#: output floor of a regularised map: a number in [0, 0.5); 0 when absent, as written before
+#: maps had floors).
 _SPECS: dict[str, tuple[type[CalibrationMap], tuple[str, ...], dict[str, str]]] = {
-    "temperature": (TemperatureMap, (), {"temperature_": "float"}),
-    "platt": (PlattMap, ("smooth_targets",), {"slope_": "float", "intercept_": "float"}),
-    "beta": (BetaMap, (), {"a_": "float", "b_": "float", "c_": "float"}),
+    "temperature": (
+        TemperatureMap, ("smooth_targets",), {"temperature_": "float", "floor_": "floor"}
+    ),
+    "platt": (
+        PlattMap,
+        ("smooth_targets",),
+        {"slope_": "float", "intercept_": "float", "floor_": "floor"},
+    ),
+    "beta": (
+        BetaMap,
+        ("smooth_targets",),
+        {"a_": "float", "b_": "float", "c_": "float", "floor_": "floor"},
+    ),
     "binning": (
         BinningMap,
         ("n_bins", "prior_strength"),
-        {"edges_": "array", "values_": "array", "bin_weights_": "array", "n_bins_used_": "int"},
+        {
+            "edges_": "array",
+            "values_": "array",
+            "bin_weights_": "array",
+            "n_bins_used_": "int",
+            "floor_": "floor",
+        },
     ),
-    "isotonic": (IsotonicMap, (), {"thresholds_": "array", "values_": "array"}),
+    "isotonic": (
+        IsotonicMap,
+        ("smooth_targets",),
+        {"thresholds_": "array", "values_": "array", "floor_": "floor"},
+    ),
     "venn_abers": (
         VennAbersMap,
         (),
@@ -139,7 +161,7 @@ def map_to_dict(cal_map: CalibrationMap, **metadata: Any) -> dict[str, Any]:
     >>> m = PlattMap().fit([-2.0, -1.0, 0.0, 1.0, 2.0, 3.0], [0, 0, 1, 0, 1, 1])
     >>> d = map_to_dict(m, note="demo")
     >>> d["method"], sorted(d["fitted"])
-    ('platt', ['intercept_', 'slope_'])
+    ('platt', ['floor_', 'intercept_', 'slope_'])
     >>> again = map_from_dict(json.loads(json.dumps(d)))
     >>> bool((again.predict([0.5, 4.0]) == m.predict([0.5, 4.0])).all())
     True
@@ -152,7 +174,7 @@ def map_to_dict(cal_map: CalibrationMap, **metadata: Any) -> dict[str, Any]:
 
     fitted: dict[str, Any] = {}
     for attr, kind in fitted_kinds.items():
-        value = getattr(cal_map, attr)
+        value = getattr(cal_map, attr, 0.0) if kind == "floor" else getattr(cal_map, attr)
         if kind == "array":
             arr = np.asarray(value, dtype=float)
             if arr.ndim != 1 or not np.all(np.isfinite(arr)):
@@ -212,7 +234,7 @@ def map_from_dict(description: Mapping[str, Any]) -> CalibrationMap:
     >>> from probwrap.calibration import IsotonicMap, map_to_dict, map_from_dict
     >>> m = IsotonicMap().fit([-1.0, 0.0, 1.0, 2.0], [0, 1, 0, 1])
     >>> map_from_dict(map_to_dict(m)).predict([1.5])
-    array([0.75])
+    array([0.625])
     """
     if not isinstance(description, Mapping):
         raise ValueError(
@@ -242,6 +264,9 @@ def map_from_dict(description: Mapping[str, Any]) -> CalibrationMap:
         raise ValueError(f"field 'settings' has unknown entries {unknown} for method {method!r}.")
     cal_map = cls(**{name: settings[name] for name in setting_names if name in settings})
     for attr, kind in fitted_kinds.items():
+        if kind == "floor" and attr not in fitted:
+            setattr(cal_map, attr, 0.0)
+            continue
         value = _need(fitted, attr, "fitted.")
         try:
             if kind == "array":
@@ -261,6 +286,8 @@ def map_from_dict(description: Mapping[str, Any]) -> CalibrationMap:
             raise ValueError(f"field 'fitted.{attr}' must be {what}; got {value!r}.") from None
         if not np.all(np.isfinite(arr)):
             raise ValueError(f"field 'fitted.{attr}' must hold finite numbers.")
+        if kind == "floor" and not 0.0 <= arr < 0.5:
+            raise ValueError(f"field 'fitted.{attr}' must be in [0, 0.5); got {value!r}.")
         setattr(cal_map, attr, arr)
     kinds = {"int": np.int64, "float": float, "bool": bool, "str": str}
     classes_kind = _need(description, "classes_kind")
