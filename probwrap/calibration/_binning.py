@@ -51,6 +51,8 @@ class BinningMap(CalibrationMap):
         Total training weight in each bin.
     n_bins_used_ : int
         Number of non-empty bins.
+    floor_ : float
+        Smallest output (0 when ``prior_strength=0``).
     classes_ : ndarray of shape (2,)
         The labels; the second one is the positive class.
 
@@ -98,8 +100,13 @@ class BinningMap(CalibrationMap):
                 f"`prior_strength` must be a finite number >= 0; got {plain(self.prior_strength)!r}."
             )
 
+    def _uses_counts(self) -> bool:
+        return bool(self.prior_strength != 0)
+
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         self._check_params()
+        if self.prior_strength > 0:
+            self._set_floor(w, 2)
         # work in weights divided by a power of two (exact), so that sums near the largest
         # double stay finite; the prior, counted in rows, is divided by the same unit (small
         # weights are left alone: the prior would overflow instead)
