@@ -133,3 +133,15 @@ def test_tiny_mean_costs_are_not_tied_by_an_absolute_tolerance():
         res = search_cutoff(s, y, np.array([[0.0, 1.0], [4.5e307, 1.0]]) * unit,
                             score_bounds=(0, 1))
         assert abs(res.cost) <= 1e-12 * unit and res.interval == (0.75, 1.0)
+
+
+def test_action_budget_with_a_huge_cost_elsewhere_and_a_tiny_saving():
+    # row 0 has a huge cost beside the action; row 10 is the only row whose best action is 1,
+    # saving 4e-95. Dividing all costs by ~1e301 to tame row 0 would underflow that saving
+    # to 0 and lose the row; the budget (1 row of 12 exceeds 1/16) must still hold
+    E = np.zeros((12, 3))
+    E[0, 0] = -1.0715086071862673e301
+    E[10, 1] = -4.16852619e-95
+    budget = fit_action_budget(E, 1, 0.0625)
+    taken = budget_actions(E, 1, budget.saving_threshold) == 1
+    assert budget.binding and taken.sum() == 0

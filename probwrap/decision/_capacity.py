@@ -127,19 +127,20 @@ def fit_action_budget(
         raise ValueError("`capacity` must be a share of rows in (0, 1]; got None.")
     w = check_sample_weight(sample_weight, E.shape[0])
     w = w / power_of_two_unit(w)  # shares are scale-free; this keeps the sums finite
-    unit, Eu = 1.0, E
+    # the rows that take the action, as budget_actions decides them (on the costs as given)
+    mask = np.argmin(E, axis=1) == a
+    unit = 1.0
     with np.errstate(over="ignore"):
         saving = np.delete(E, a, axis=1).min(axis=1) - E[:, a]
-    if not np.all(np.abs(saving) < 2.0**1000):
+    if not np.all(np.abs(saving[mask]) < 2.0**1000):
         # differences of costs near the largest double overflow (and cut-offs between savings
         # that large can too); the ranks of the savings do not change when all costs are
-        # divided by one power of two (exact)
+        # divided by one power of two (exact; savings that underflow tie at 0, and tied rows
+        # are kept or dropped together, so the share still holds)
         unit = power_of_two_unit(E)
         Eu = E / unit
         saving = np.delete(Eu, a, axis=1).min(axis=1) - Eu[:, a]
     total = w.sum()
-    best = np.argmin(Eu, axis=1)
-    mask = best == a
     if w[mask].sum() <= cap * total * (1 + 1e-12):
         return ActionBudget(a, cap, 0.0, float(w[mask].sum() / total), False)
     rows = _SortedRows(saving[mask], None)
