@@ -55,8 +55,18 @@ def _row_blocks(X: Any) -> tuple[list, list | None]:
             lengths = None
         return blocks, lengths
     if hasattr(X, "npartitions") and hasattr(X, "to_delayed"):
-        return list(X.to_delayed()), None
+        return _partitions(X), None
     raise ValueError(f"`X` is a Dask collection of unsupported type {type(X).__name__}.")
+
+
+def _partitions(frame: Any) -> list:
+    """Delayed partitions of a Dask DataFrame or Series, as the collection defines them.
+
+    Without ``optimize_graph=False``, Dask's optimiser may combine partitions differently for
+    different column selections of one frame (reading fewer columns of a Parquet file gives
+    fewer, larger partitions), so ``df[features]`` and ``df["label"]`` would no longer line up.
+    """
+    return list(frame.to_delayed(optimize_graph=False))
 
 
 def _aligned_blocks(v: Any, name: str, X: Any, blocks: list, lengths: list | None) -> list:
@@ -66,11 +76,13 @@ def _aligned_blocks(v: Any, name: str, X: Any, blocks: list, lengths: list | Non
     dask, da = _import_dask()
     if is_dask_collection(v):
         if not _is_dask_array(v):
-            parts = list(v.to_delayed())
+            parts = _partitions(v)
             if len(parts) != len(blocks):
                 raise ValueError(
                     f"`{name}` has {len(parts)} partitions but `X` has {len(blocks)} blocks; "
-                    "they must be partitioned alike (e.g. columns of one Dask DataFrame)."
+                    "they must be partitioned alike: take both from one Dask DataFrame, or "
+                    f"repartition one like the other (`{name}.repartition(npartitions=...)`, "
+                    "with known divisions `repartition(divisions=X.divisions)`)."
                 )
             return parts
         if lengths is None:
