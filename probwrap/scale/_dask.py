@@ -81,8 +81,7 @@ def _aligned_blocks(v: Any, name: str, X: Any, blocks: list, lengths: list | Non
                 raise ValueError(
                     f"`{name}` has {len(parts)} partitions but `X` has {len(blocks)} blocks; "
                     "they must be partitioned alike: take both from one Dask DataFrame, or "
-                    f"repartition one like the other (`{name}.repartition(npartitions=...)`, "
-                    "with known divisions `repartition(divisions=X.divisions)`)."
+                    f"with known divisions `{name}.repartition(divisions=X.divisions)`."
                 )
             return parts
         if lengths is None:
