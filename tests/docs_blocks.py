@@ -81,11 +81,13 @@ def fresh_venv_blocks(kind: str) -> list[Block]:
 def _scored(n_outcomes: int):
     """A logistic model fitted on invented summer parcels (demo data, not a check value)."""
     from sklearn.linear_model import LogisticRegression
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
 
     from probwrap.datasets import make_parcels
 
     train = make_parcels(4000, n_outcomes=n_outcomes, random_state=10)
-    model = LogisticRegression(max_iter=1000).fit(train.data, train.target)
+    model = make_pipeline(StandardScaler(), LogisticRegression()).fit(train.data, train.target)
     return model, make_parcels
 
 
