@@ -211,7 +211,7 @@ def test_classwise_is_mean_of_sklearn_one_vs_rest_curves(iris_holdout):
 
 
 # ---------------------------------------------------------------------------------------------
-# Brier decomposition — Murphy (1973); Stephenson et al. (2008) for the binned terms
+# Brier decomposition — Murphy (1973); Stephenson, Coelho & Jolliffe (2008) for the binned terms
 # ---------------------------------------------------------------------------------------------
 
 
@@ -240,9 +240,10 @@ def test_murphy_identity_and_brier_on_real_data(cancer_holdout):
 
 
 def test_binned_decomposition_stephenson_terms(cancer_holdout):
-    # Stephenson, Coelho, Doblas-Reyes & Balmaseda (2008), eq. for the binned decomposition:
-    # BS = REL - RES + UNC + WBV - WBC  (value from memory of the paper's form; the algebra is
-    # also a direct expansion of (p - y)^2 around the bin means)
+    # Stephenson, Coelho & Jolliffe (2008), "Two extra components in the Brier score
+    # decomposition", Weather and Forecasting 23:752-757, the binned decomposition:
+    # BS = REL - RES + UNC + WBV - WBC  (the form recalled from memory of the paper; the algebra
+    # is also a direct expansion of (p - y)^2 around the bin means)
     y, p = cancer_holdout
     d = brier_decomposition(y, p, n_bins=10)
     assert d.within_bin_variance > 0
