@@ -227,12 +227,12 @@ def owner_resolution(owner: Any) -> float:
 def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: str):
     """Held-out predictions of a frozen binary estimator on Dask rows, as tally rows.
 
-    The returned :class:`~probwrap._heldout.HeldOutPredictions` has one row per (bin, class)
+    The returned :class:`~probwrap._predictions.HeldOutPredictions` has one row per (bin, class)
     of the tally, weighted by the tallied weight; ``from_tally`` is set.
     """
     from sklearn.frozen import FrozenEstimator
 
-    from .._heldout import HeldOutPredictions
+    from .._predictions import HeldOutPredictions
 
     estimator = owner.estimator
     if not isinstance(estimator, FrozenEstimator):

@@ -376,7 +376,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     from scipy.optimize import brentq
     from sklearn.base import clone
 
-    from .._heldout import _resolve_response
+    from .._predictions import resolve_response
     from ..calibration._temperature import _LOG_SPAN, TemperatureMap
     from ._dask import _aligned_blocks, _import_dask, _row_blocks, _tree_merge, owner_resolution
 
@@ -385,7 +385,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     k = classes.shape[0]
     owner.estimator_ = estimator
     owner.classes_ = classes
-    owner.response_ = _resolve_response(estimator, owner._heldout_response)
+    owner.response_ = resolve_response(estimator, owner._heldout_response)
     if hasattr(estimator, "n_features_in_"):
         owner.n_features_in_ = estimator.n_features_in_
     if hasattr(estimator, "feature_names_in_"):
