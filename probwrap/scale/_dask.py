@@ -114,6 +114,20 @@ def _tree_merge(dask: Any, parts: list) -> Any:
     return parts[0]
 
 
+def _persist(dask: Any, parts: list) -> list:
+    return list(dask.persist(*parts))
+
+
+def _reduce(dask: Any, fn, parts: list, *args) -> Any:
+    """Sum of ``fn(part, *args)`` over the blocks (small results only)."""
+    call = dask.delayed(fn, pure=True)
+    results = dask.compute(*[call(part, *args) for part in parts])
+    out = results[0]
+    for r in results[1:]:
+        out = tuple(a + b for a, b in zip(out, r, strict=True)) if isinstance(out, tuple) else out + r
+    return out
+
+
 def tally_dask_scores(
     scores: Any,
     y: Any,
