@@ -31,6 +31,34 @@ ALLOWED_SKIPS = [
 
 _SOURCE_TREE = Path(__file__).resolve().parents[1] / "probwrap"
 
+# Tests that take more than a few seconds on one core: left out by `python -m pytest -m "not
+# slow"` (the fast subset for development), always run by the README's command and by CI. Kept
+# here, by node id prefix, so that marking needs no edit of the test files themselves.
+SLOW_TESTS = (
+    "tests/test_examples.py::",
+    "tests/test_docs_code_blocks.py::test_python_blocks_run",
+    "tests/test_docs_code_blocks.py::test_shell_blocks_run",
+    "tests/test_report_render.py::",
+    "tests/test_cli_demo.py::test_demo_subprocess_writes_report",
+    "tests/test_cli_demo.py::test_demo_in_process_summary",
+    "tests/test_cli_verbs.py::test_module_entry_point_in_a_subprocess",
+    "tests/test_plot_displays.py::test_plot_package_does_not_import_matplotlib_at_import",
+    "tests/test_scale_tally.py::test_core_imports_and_tallies_without_dask",
+    "tests/test_prior_shift_wrapper.py::test_multiclass_adapt_and_monitor",
+    "tests/test_prior_shift_wrapper.py::test_adapt_recovers_prior_and_true_posteriors_of_gaussian",
+    "tests/test_scale_bootstrap.py::test_dask_prior_interval_agrees_with_in_memory",
+    "tests/test_scale_bootstrap.py::test_tally_prior_interval_covers_like_the_in_memory_bootstrap",
+    "tests/test_scale_bootstrap.py::test_dask_cutoff_interval_agrees_with_in_memory",
+    "tests/test_datasets.py::test_winter_keeps_the_class_conditional_feature_distributions",
+    "probwrap/report/__init__.py::probwrap.report.write_report",
+)
+
+
+def pytest_collection_modifyitems(config, items):
+    for item in items:
+        if item.nodeid.startswith(SLOW_TESTS):
+            item.add_marker(pytest.mark.slow)
+
 
 def _ci() -> bool:
     return os.environ.get("PROBWRAP_CI", "") not in ("", "0")
