@@ -91,12 +91,14 @@ def _scored(n_outcomes: int):
     return model, make_parcels
 
 
-def _binary_labelled(n, season, seed):
+def _binary_labelled(n, season, seed, text_labels=False):
     model, make = _scored(2)
     s = make(n, season=season, random_state=seed)
+    import numpy as np
     import pandas as pd
 
-    return pd.DataFrame({"risk": model.predict_proba(s.data)[:, 1], "damaged": s.target})
+    labels = np.where(s.target == 1, "yes", "no") if text_labels else s.target
+    return pd.DataFrame({"risk": model.predict_proba(s.data)[:, 1], "damaged": labels})
 
 
 def _three_way(n, season, seed, labelled):
@@ -111,8 +113,9 @@ def _three_way(n, season, seed, labelled):
 
 
 INPUT_FILES = {
-    # labelled held-out scores of the summer model (probabilities in "risk", 0/1 in "damaged")
-    "heldout.csv": lambda: _binary_labelled(3000, "summer", 11),
+    # labelled held-out scores of the summer model: probabilities in "risk"; "damaged" holds
+    # yes / no in heldout.csv (the README shows --positive-label) and 0 / 1 in scores.csv
+    "heldout.csv": lambda: _binary_labelled(3000, "summer", 11, text_labels=True),
     "scores.csv": lambda: _binary_labelled(3000, "summer", 11),
     # new, unlabelled scores: today's summer parcels, and a winter week (damage roughly doubles)
     "today.parquet": lambda: _binary_labelled(2000, "summer", 12)[["risk"]],
