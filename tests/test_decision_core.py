@@ -1,4 +1,5 @@
-"""Reference tests of the decision array core; each names its outside source."""
+"""Tests of the decision array core: reference tests name their outside source (a published
+formula, scikit-learn, brute-force enumeration); consistency tests say so."""
 
 from __future__ import annotations
 
@@ -362,7 +363,7 @@ def test_multiclass_offsets_never_worse_than_bayes_and_brute_force_small():
 
 
 def test_cutoff_interval_reweighting_equals_explicit_resampling():
-    # Reference: search_cutoff on rows explicitly repeated by the bootstrap counts.
+    # Consistency test: search_cutoff on rows explicitly repeated by the bootstrap counts.
     rng = np.random.default_rng(12)
     p = np.round(rng.uniform(size=300), 2)
     y = (rng.uniform(size=300) < p).astype(int)
