@@ -19,7 +19,7 @@ How blocks are treated (also in DEVELOPERS.md, "How we test"):
       what cannot run here (a cluster, a file system the reader has), never for a fragment.
   ``<!-- known-failure: reason -->``
       the block runs and is expected to fail because of an open bug named in the reason
-      (``xfail``, not strict: remove the marker with the fix).
+      (a strict ``xfail``: once the block runs, the test fails until the marker is removed).
   ``<!-- fresh-venv: quickstart -->`` / ``<!-- fresh-venv: tests -->`` (README.md only)
       install commands; ``.ci/run`` runs them literally in fresh virtual environments
       (``tests/docs_blocks.py`` prints them), so this test does not run them in its own.
@@ -75,7 +75,7 @@ def _mark(block, *extra):
     if block.marker == "not-run":
         marks.append(pytest.mark.skip(reason=f"docs marker not-run at {block.name}: {block.reason}"))
     elif block.marker == "known-failure":
-        marks.append(pytest.mark.xfail(reason=f"{block.name}: {block.reason}", strict=False))
+        marks.append(pytest.mark.xfail(reason=f"{block.name}: {block.reason}", strict=True))
     return marks
 
 
@@ -104,6 +104,8 @@ def test_python_blocks_run(blocks, tmp_path):
     known = [f"{b.name}: {b.reason}" for b in run if b.marker == "known-failure"]
     if not _run_python(run, tmp_path, check=not known):
         pytest.xfail("; ".join(known))
+    if known:
+        pytest.fail(f"the blocks run now: remove their known-failure markers ({'; '.join(known)})")
 
 
 def _run_python(blocks, tmp_path, check):
