@@ -61,10 +61,17 @@ def test_collapse_case_does_not_move_predictions_beyond_the_interval(weak_model)
     assert model.prior_estimate_.ml_prior[1] == 0.0  # the collapse is there ...
     lo, hi = model.target_prior_interval_[1]
     assert lo <= 0.05 <= hi  # ... the interval is honest about it ...
-    assert model.shift_pvalue_ >= 0.05 and not model.shift_detected_
-    np.testing.assert_array_equal(model.predict_proba(X_new), before)  # ... and nothing moves
-    # Adapting regardless of evidence moves the predictions only within the interval.
-    eager = PriorShiftWrapper(weak_model, shift_level=None, random_state=0).fit(X, y)
+    # ... the evidence (statistic 3.4, p = 0.07) is weak, so the predictions move by a small
+    # share of the way, and stay between the predictions at the interval's ends
+    assert model.shift_pvalue_ >= 0.05 and 0 <= model.adaptation_weight_ < 0.5
+    lo_a, hi_a = (adjust_to_prior(model.prior_estimator_.calibrate(
+        model.estimator_.predict_proba(X_new)), model.source_prior_, [1 - v, v])[:, 1]
+        for v in (lo, hi))
+    after = model.predict_proba(X_new)[:, 1]
+    assert np.all(after >= lo_a - 1e-12) and np.all(after <= hi_a + 1e-12)
+    assert lo <= model.applied_prior_[1] <= hi
+    # The estimate applied in full also moves the predictions only within the interval.
+    eager = PriorShiftWrapper(weak_model, min_evidence=0, random_state=0).fit(X, y)
     with pytest.warns(BoundaryPriorWarning):
         eager.adapt(X_new)
     moved = eager.predict_proba(X_new)[:, 1]
@@ -72,8 +79,29 @@ def test_collapse_case_does_not_move_predictions_beyond_the_interval(weak_model)
     cal = eager.prior_estimator_.calibrate(eager.estimator_.predict_proba(X_new))
     at_lo = adjust_to_prior(cal, src, [1 - lo, lo])[:, 1]
     at_hi = adjust_to_prior(cal, src, [1 - hi, hi])[:, 1]
-    assert lo <= eager.target_prior_[1] <= hi
+    assert lo <= eager.target_prior_[1] <= hi and eager.adaptation_weight_ == 1.0
     assert np.all(moved >= at_lo - 1e-12) and np.all(moved <= at_hi + 1e-12)
+    np.testing.assert_allclose(before[:, 1], eager.prior_estimator_.calibrate(
+        eager.estimator_.predict_proba(X_new))[:, 1])
+
+
+def test_predictions_do_not_move_without_evidence():
+    # Statistic at or below min_evidence * (k - 1): exactly the calibrated posteriors.
+    rng = np.random.default_rng(31)
+    p_lab, y_lab = binary_gaussian(2000, 0.3, rng, sep=1.5)
+    X = np.log(p_lab[:, 1:] / p_lab[:, :1])  # one feature whose logistic fit is the posterior
+    model = PriorShiftWrapper(LogisticRegression(), cv=3, random_state=0).fit(X, y_lab)
+    for seed in range(6):
+        p_new, _ = binary_gaussian(1500, 0.3, np.random.default_rng(100 + seed), sep=1.5)
+        X_new = np.log(p_new[:, 1:] / p_new[:, :1])
+        before = model.predict_proba(X_new)
+        model.adapt(X_new)
+        if model.shift_statistic_ <= 2.0:
+            assert not model.shift_detected_ and model.adaptation_weight_ == 0.0
+            np.testing.assert_array_equal(model.predict_proba(X_new), before)
+        else:
+            expected = 1 - 2.0 / model.shift_statistic_
+            assert model.adaptation_weight_ == pytest.approx(expected, rel=1e-12)
 
 
 def test_no_evidence_keeps_predictions_and_evidence_moves_them(weak_model):
@@ -90,7 +118,11 @@ def test_no_evidence_keeps_predictions_and_evidence_moves_them(weak_model):
     X_more, _ = gaussian(5000, 0.25, rng)
     model.adapt(X_more)
     assert model.shift_detected_ and model.shift_pvalue_ < 1e-6
-    np.testing.assert_allclose(model.applied_prior_, model.target_prior_)
+    w = model.adaptation_weight_
+    assert w > 0.9
+    np.testing.assert_allclose(
+        model.applied_prior_, model.source_prior_ + w * (model.target_prior_ - model.source_prior_)
+    )
     assert not np.allclose(model.predict_proba(X[:200]), before)
 
 
