@@ -112,11 +112,23 @@ def _confusions(block, calibrator, k):
 def _score_sums(block, calibrator, src):
     """Weighted sums of the per-row shift-test scores (see probwrap.shift.shift_score_test)."""
     p, w = block[0], block[-1]
-    if calibrator is not None and len(block) == 4:  # source blocks hold uncalibrated posteriors
-        p = calibrator.predict(p)
     q = p / src
     u = q[:, 1:] - q[:, :1]
     return w @ u, (u * w[:, None]).T @ u
+
+
+def _class_score_sums(block, calibrator, src):
+    """Per-class weighted sums of the labelled rows' scores, weights and squared weights."""
+    p, _, y, w = block
+    if calibrator is not None:  # source blocks hold uncalibrated posteriors
+        p = calibrator.predict(p)
+    q = p / src
+    u = q[:, 1:] - q[:, :1]
+    k = src.shape[0]
+    onehot = np.eye(k)[y] * w[:, None]  # (n, k)
+    su = onehot.T @ u
+    suu = np.einsum("nc,ni,nj->cij", onehot, u, u)
+    return su, suu, onehot.sum(axis=0), (onehot * w[:, None]).sum(axis=0)
 
 
 def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
@@ -195,7 +207,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             cal.n_classes_ = k
             cal.converged_ = bool(converged)
         hard, soft = _reduce(dask, _confusions, parts, cal, k)
-        su, suu = _reduce(dask, _score_sums, parts, cal, class_weight / total)
+        su, suu, sw, sww = _reduce(dask, _class_score_sums, parts, cal, class_weight / total)
     finally:
         parts.clear()  # release the persisted blocks on the workers
     est.n_classes_ = k
@@ -205,8 +217,17 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     est.soft_confusion_ = soft / total
     est._src = None
     est.n_source_effective_ = total**2 / squared_weight
-    mean = su / total
-    est._source_score = (mean, suu / total - np.outer(mean, mean), est.n_source_effective_)
+    # stratified mean and covariance of the mean, as probwrap.shift._estimate._source_moments
+    prior = class_weight / total
+    mean = np.zeros(k - 1)
+    cov = np.zeros((k - 1, k - 1))
+    for c in range(k):
+        m_c = su[c] / sw[c]
+        c_c = suu[c] / sw[c] - np.outer(m_c, m_c)
+        n_c = sw[c] ** 2 / sww[c]
+        mean = mean + prior[c] * m_c
+        cov = cov + prior[c] ** 2 * c_c / max(n_c - 1.0, 1.0)
+    est._source_score = (mean, cov)
     owner.estimator_ = estimator
     owner.classes_ = classes
     if hasattr(estimator, "n_features_in_"):

@@ -561,6 +561,7 @@ def shift_score_test(
     sample_weight: Any = None,
     source_proba: Any = None,
     source_sample_weight: Any = None,
+    source_y: Any = None,
 ) -> ShiftTestResult:
     r"""Score test that unlabelled rows have the source class priors; no estimate needed.
 
@@ -587,6 +588,13 @@ def shift_score_test(
         Calibrated posteriors of the labelled rows (None: one-sample test, posteriors taken
         as exact).
     source_sample_weight : array-like of shape (m,), default=None
+    source_y : array-like of shape (m,), default=None
+        Class indices of the labelled rows. When given (and ``source_prior`` is their weighted
+        class shares), the labelled mean is the class-stratified mean
+        :math:`\sum_c \pi^s_c \bar u_c` and its variance the stratified
+        :math:`\sum_c (\pi^s_c)^2 s^2_c / (n_c - 1)`: the class shares of the labelled rows
+        are the null hypothesis itself, so their sampling error does not enter (without
+        ``source_y`` the plain two-sample variance is used, which is larger).
 
     Returns
     -------
@@ -606,42 +614,64 @@ def shift_score_test(
     p, w = _check_target(proba, sample_weight)
     k = p.shape[1]
     src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
-    ps = ws = None
+    mean, cov, n = _mean_cov(_score_rows(p, src), w)
+    source = None
     if source_proba is not None:
         ps, ws = _check_target(source_proba, source_sample_weight, name="source_proba")
         if ps.shape[1] != k:
             raise ValueError(f"`source_proba` has {ps.shape[1]} columns but `proba` has {k}.")
-    stat, pvalue = _score_stat(p, w, src, None, ps, ws, None)
+        ys = None
+        if source_y is not None:
+            check_same_length(("source_proba", ps), ("source_y", source_y))
+            ys, _ = check_labels(source_y, name="source_y", classes=np.arange(k), min_classes=1)
+        source = _source_moments(_score_rows(ps, src), ws, ys, src)
+    stat, pvalue = _score_stat_moments((mean, cov, n), source, k)
     return ShiftTestResult(statistic=stat, pvalue=pvalue, df=k - 1)
 
 
-def _score_stat(
-    p: np.ndarray,
+def _source_moments(
+    u: np.ndarray,
     w: np.ndarray,
-    src: np.ndarray,
-    n_eff: float | None,
-    ps: np.ndarray | None,
-    ws: np.ndarray | None,
-    ns_eff: float | None,
-) -> tuple[float, float]:
-    """Statistic and p-value of :func:`shift_score_test` (``n_eff`` overrides Kish's count)."""
-    mean, cov, kish = _mean_cov(_score_rows(p, src), w)
-    target = (mean, cov, kish if not n_eff else float(n_eff))
-    source = None
-    if ps is not None:
-        m_s, c_s, kish_s = _mean_cov(_score_rows(ps, src), ws)
-        source = (m_s, c_s, kish_s if not ns_eff else float(ns_eff))
-    return _score_stat_moments(target, source, p.shape[1])
+    y: np.ndarray | None,
+    prior: np.ndarray,
+    n_eff: float | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Mean of the labelled rows' scores and the covariance of that mean.
+
+    With class indices ``y`` the mean is stratified by class, ``sum_c prior_c mean_c``, with
+    covariance ``sum_c prior_c^2 cov_c / (n_c - 1)`` (``n_c`` Kish's count of class ``c``, or
+    ``n_eff`` times the class's weight share when ``n_eff`` overrides it); without, the plain
+    weighted mean with ``cov / (n - 1)``.
+    """
+    if y is None:
+        mean, cov, n = _mean_cov(u, w)
+        n = float(n_eff) if n_eff else n
+        return mean, cov / max(n - 1.0, 1.0)
+    total = float(w.sum())
+    mean = np.zeros(u.shape[1])
+    cov = np.zeros((u.shape[1], u.shape[1]))
+    for c in range(prior.shape[0]):
+        rows = y == c
+        wc = w[rows]
+        if wc.sum() <= 0:
+            continue
+        m_c, c_c, n_c = _mean_cov(u[rows], wc)
+        if n_eff:
+            n_c = float(n_eff) * float(wc.sum()) / total
+        mean = mean + prior[c] * m_c
+        cov = cov + prior[c] ** 2 * c_c / max(n_c - 1.0, 1.0)
+    return mean, cov
 
 
 def _score_stat_moments(target: tuple, source: tuple | None, k: int) -> tuple[float, float]:
-    """Score statistic from (mean, covariance, effective rows) of the per-row scores."""
+    """Score statistic from the target's (mean, covariance, effective rows) of the per-row
+    scores and the labelled rows' (mean, covariance of the mean)."""
     mean, cov, n = target
     total = cov / max(n - 1.0, 1.0)
     if source is not None:
-        m_s, c_s, n_s = source
+        m_s, c_s = source
         mean = mean - m_s
-        total = total + c_s / max(n_s - 1.0, 1.0)
+        total = total + c_s
     stat = float(mean @ np.linalg.pinv(total) @ mean) if np.any(total) else 0.0
     stat = max(stat, 0.0)
     return stat, float(chi2.sf(stat, k - 1))

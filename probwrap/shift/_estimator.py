@@ -21,6 +21,7 @@ from ._estimate import (
     _score_stat_moments,
     _simplex_least_squares,
     _solve_prior,
+    _source_moments,
     _warn_empty_columns,
     acc_prior,
     bbse_prior,
@@ -81,7 +82,8 @@ class PriorEstimator:
         Whether each bootstrap resample also redraws the labelled rows (re-estimating the
         calibration by one Newton step from the fitted one, the source prior and the confusion
         matrices), so the interval reflects the uncertainty of both samples. With ``False``
-        only the unlabelled rows are redrawn.
+        only the unlabelled rows are redrawn. (Bootstrap intervals only: the score interval
+        always carries both samples' error.)
     random_state : int, RandomState or None, default=None
     prior_strength : float, default=20.0
         ``method="em"`` only: pseudo-rows of a Dirichlet prior centred on the source prior
@@ -207,8 +209,10 @@ class PriorEstimator:
         summary = self._summarise(p, y_idx, w)
         self.calibrator_, self.source_prior_, self.confusion_, self.soft_confusion_ = summary
         # mean and covariance of the labelled rows' scores, for the two-sample shift test
-        m, c, _ = _mean_cov(_score_rows(self.calibrate(p), self.source_prior_), w)
-        self._source_score = (m, c, self.n_source_effective_)
+        self._source_score = _source_moments(
+            _score_rows(self.calibrate(p), self.source_prior_), w, self._src[1],
+            self.source_prior_, effective_rows,
+        )
         return self
 
     def _summarise(
@@ -500,8 +504,9 @@ class PriorEstimator:
                         UserWarning,
                         stacklevel=2,
                     )
-                lo, hi = min(lo, point.prior[1]), max(hi, point.prior[1])
                 bounds = np.array([[1.0 - hi, 1.0 - lo], [lo, hi]])
+                centre = ml if ml is not None else point.prior
+                bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
             else:
                 rs = self.random_state if random_state is None else random_state
                 centre = ml if ml is not None else point.prior

@@ -152,10 +152,12 @@ def score_interval(
     .. math::
 
         T(\pi) = \frac{\bigl(\bar u_t(\pi) - \bar f_s(\pi)\bigr)^2}
-                      {s^2_t(\pi) / (n_t - 1) + s^2_f(\pi) / (n_s - 1)},
+                      {s^2_t(\pi) / (n_t - 1) + \sum_c \pi_c^2\, s^2_c(\pi) / (n_c - 1)},
         \qquad f = \frac{\pi_y}{\pi^s_y}\, u(x; \pi)\ \text{on the labelled rows},
 
-    is approximately chi-square with one degree of freedom at the true prior, and the interval
+    (the labelled mean and variance taken within each class and combined with the shares
+    :math:`\pi`, since the labelled class shares are known exactly) is approximately
+    chi-square with one degree of freedom at the true prior, and the interval
     is every :math:`\pi` with :math:`T(\pi) \le \chi^2_{1, \text{level}}` (test inversion, as
     for the Wilson (1927) score interval of a proportion). Both samples' sampling error enter
     the denominator; because the equality of means holds for every calibration map, the
@@ -216,13 +218,19 @@ def score_interval(
         source_sample_weight, float
     )
     n_t = effective_rows or float(w_t.sum() ** 2 / np.dot(w_t, w_t))
-    n_s = source_effective_rows or float(w_s.sum() ** 2 / np.dot(w_s, w_s))
-    wt, ws = w_t / w_t.sum(), w_s / w_s.sum()
+    wt = w_t / w_t.sum()
     q_t, q_s = p_t / src, p_s / src
     a_t, d_t = q_t[:, 0], q_t[:, 1] - q_t[:, 0]
-    a_s, d_s = q_s[:, 0], q_s[:, 1] - q_s[:, 0]
-    pos = y_s == 1
     tiny = np.finfo(float).tiny
+    strata = []  # per class: score pieces, normalised weights, effective rows
+    for c in (0, 1):
+        rows = y_s == c
+        wc = w_s[rows]
+        if source_effective_rows:
+            n_c = float(source_effective_rows) * float(wc.sum()) / float(w_s.sum())
+        else:
+            n_c = float(wc.sum() ** 2 / np.dot(wc, wc))
+        strata.append((q_s[rows, 0], q_s[rows, 1] - q_s[rows, 0], wc / wc.sum(), n_c))
 
     def stat(t: np.ndarray) -> np.ndarray:
         t = np.atleast_1d(np.asarray(t, dtype=float))
@@ -232,11 +240,15 @@ def score_interval(
             u_t = d_t[:, None] / np.maximum(a_t[:, None] + tc * d_t[:, None], tiny)
             m_t = wt @ u_t
             v_t = np.maximum(wt @ (u_t * u_t) - m_t**2, 0.0)
-            iw = np.where(pos[:, None], tc / src[1], (1.0 - tc) / src[0])
-            f_s = iw * d_s[:, None] / np.maximum(a_s[:, None] + tc * d_s[:, None], tiny)
-            m_s = ws @ f_s
-            v_s = np.maximum(ws @ (f_s * f_s) - m_s**2, 0.0)
-            var = v_t / max(n_t - 1.0, 1.0) + v_s / max(n_s - 1.0, 1.0)
+            m_s = np.zeros(tc.shape[0])
+            var = v_t / max(n_t - 1.0, 1.0)
+            for c, (a_c, d_c, w_c, n_c) in enumerate(strata):
+                share = tc if c == 1 else 1.0 - tc
+                u_c = d_c[:, None] / np.maximum(a_c[:, None] + tc * d_c[:, None], tiny)
+                m_c = w_c @ u_c
+                v_c = np.maximum(w_c @ (u_c * u_c) - m_c**2, 0.0)
+                m_s = m_s + share * m_c
+                var = var + share**2 * v_c / max(n_c - 1.0, 1.0)
             out[lo:lo + 32] = (m_t - m_s) ** 2 / np.maximum(var, 1e-300)
         return out
 
