@@ -27,7 +27,8 @@ Three parts, each printing its targets beside the measured values.
    the same rows. Target: <= 1 s.
 
 Run: ``nice python benchmarks/shift.py`` (about 15 minutes on two shared cores) or
-``--quick`` (about a minute; fewer repetitions, so coverage is only indicative).
+``--quick`` (about a minute; fewer repetitions, so coverage is only indicative);
+``--only=evidence`` (or ``coverage``, ``speed``) runs one part.
 """
 
 from __future__ import annotations
@@ -253,13 +254,20 @@ def speed() -> None:
     print(f"   adapt, BCa bootstrap, 200 resamples           {t_bca * 1e3:8.2f} ms")
 
 
-def main(quick: bool = False) -> None:
+def main(quick: bool = False, parts: tuple[str, ...] = ("evidence", "coverage", "speed")) -> None:
+    import os
+
     t0 = time.perf_counter()
-    evidence(quick)
-    coverage(quick)
-    speed()
+    print(f"(load average at start: {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores)\n")
+    if "evidence" in parts:
+        evidence(quick)
+    if "coverage" in parts:
+        coverage(quick)
+    if "speed" in parts:
+        speed()
     print(f"\n(total {time.perf_counter() - t0:.0f} s)")
 
 
 if __name__ == "__main__":
-    main(quick="--quick" in sys.argv)
+    chosen = tuple(a[len("--only="):] for a in sys.argv if a.startswith("--only="))
+    main(quick="--quick" in sys.argv, parts=chosen or ("evidence", "coverage", "speed"))

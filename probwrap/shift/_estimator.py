@@ -493,6 +493,7 @@ class PriorEstimator:
                     p, self.calibrate(source[0]), source[1], src, sample_weight=w,
                     source_sample_weight=source[2], effective_rows=n_eff,
                     source_effective_rows=n_src, confidence_level=self.confidence_level,
+                    centre=float((ml if ml is not None else point.prior)[1]),
                 )
                 if not consistent:
                     warnings.warn(

@@ -139,6 +139,7 @@ def score_interval(
     source_effective_rows: float | None = None,
     confidence_level: float = 0.95,
     n_grid: int = 241,
+    centre: float | None = None,
 ) -> tuple[np.ndarray, bool]:
     r"""Two-sample score interval for the positive-class prior of unlabelled rows (two classes).
 
@@ -180,8 +181,11 @@ def score_interval(
         Override Kish's effective sample sizes.
     confidence_level : float, default=0.95
     n_grid : int, default=241
-        Grid points (uniform in log-odds, plus 0 and 1) searched before the endpoints are
-        refined by Brent's method.
+        Grid points (uniform in log-odds, plus 0 and 1) searched for accepted priors when
+        ``centre`` is not given or not accepted.
+    centre : float, default=None
+        A prior inside the interval (for example the maximum-likelihood estimate): the
+        endpoints are then found by Brent's method between it and 0 and 1, without a grid.
 
     Returns
     -------
@@ -253,6 +257,17 @@ def score_interval(
         return out
 
     crit = float(chi2.ppf(float(confidence_level), 1))
+
+    def excess(t: float) -> float:
+        v = float(stat(np.array([t]))[0])
+        return (v if np.isfinite(v) else 1e300) - crit
+
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        if centre is not None and excess(float(centre)) <= 0:
+            c = float(centre)
+            lo_t = 0.0 if c <= 0 or excess(0.0) <= 0 else brentq(excess, 0.0, c, xtol=1e-10)
+            hi_t = 1.0 if c >= 1 or excess(1.0) <= 0 else brentq(excess, c, 1.0, xtol=1e-10)
+            return np.array([float(lo_t), float(hi_t)]), True
     inner = 1.0 / (1.0 + np.exp(-np.linspace(-14.0, 14.0, max(int(n_grid) - 2, 3))))
     grid = np.concatenate([[0.0], inner, [1.0]])
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
@@ -263,11 +278,6 @@ def score_interval(
             best = float(grid[int(np.argmin(values))])
             return np.array([best, best]), False
         first, last = int(np.flatnonzero(ok)[0]), int(np.flatnonzero(ok)[-1])
-
-        def excess(t: float) -> float:
-            v = float(stat(np.array([t]))[0])
-            return (v if np.isfinite(v) else 1e300) - crit
-
         lo_t = grid[first] if first == 0 else brentq(excess, grid[first - 1], grid[first],
                                                      xtol=1e-10)
         hi_t = grid[last] if last == grid.shape[0] - 1 else brentq(excess, grid[last],
