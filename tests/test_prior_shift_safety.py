@@ -409,3 +409,19 @@ def test_default_interval_is_fast_enough_to_be_the_default():
     est._bootstrap = None  # would raise TypeError if called
     res = est.estimate(p_new)
     assert res.interval[1, 0] < 0.3 < res.interval[1, 1]
+
+
+def test_estimator_test_is_the_stratified_public_score_test():
+    # Consistency test: PriorEstimator.estimate reports shift_score_test on the calibrated
+    # posteriors with the labelled rows' classes (stratified variance), which is never below
+    # the plain two-sample statistic's evidence (its variance is smaller).
+    rng = np.random.default_rng(18)
+    p_src, y_src = binary_gaussian(900, 0.3, rng, sep=1.2)
+    p_new, _ = binary_gaussian(700, 0.38, rng, sep=1.2)
+    est = PriorEstimator(n_resamples=0).fit(p_src, y_src)
+    res = est.estimate(p_new)
+    cal_s, cal_t = est.calibrate(p_src), est.calibrate(p_new)
+    strat = shift_score_test(cal_t, est.source_prior_, source_proba=cal_s, source_y=y_src)
+    plain = shift_score_test(cal_t, est.source_prior_, source_proba=cal_s)
+    assert res.shift_statistic == pytest.approx(strat.statistic, rel=1e-10)
+    assert strat.statistic > plain.statistic
