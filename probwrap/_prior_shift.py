@@ -309,8 +309,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         return self
 
     def _dask_replicates(self) -> int:
-        """Bootstrap replicates to tally on Dask input (for ``target_prior_interval_``)."""
-        return int(self.n_resamples)
+        """Bootstrap replicates to tally on Dask input (for ``target_prior_interval_``).
+
+        None for the score interval: it is computed from the tallies themselves, so a Dask
+        fit pays for no replicates unless a bootstrap interval is asked for.
+        """
+        return 0 if self.interval == "score" else int(self.n_resamples)
 
     # -- adaptation ------------------------------------------------------------------------------
     def _check_features(self, X: Any, what: str) -> None:
