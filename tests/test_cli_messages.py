@@ -252,9 +252,13 @@ def test_csv_numbers_read_back_exactly_without_deprecated_options(tmp_path, recw
 
 # -- missing optional packages -------------------------------------------------------------------
 _BLOCKED = textwrap.dedent("""
-    import sys
-    for name in ("pandas", "pyarrow", "tqdm"):
-        sys.modules[name] = None  # as if not installed
+    import importlib.abc, sys
+    class Block(importlib.abc.MetaPathFinder):  # as if the cli extra were not installed
+        def find_spec(self, name, path=None, target=None):
+            if name.split(".")[0] in ("pandas", "pyarrow", "tqdm"):
+                raise ModuleNotFoundError(f"No module named {name!r}", name=name)
+            return None
+    sys.meta_path.insert(0, Block())
     from probwrap.cli import main
     sys.exit(main(sys.argv[1:]))
 """)

@@ -271,3 +271,14 @@ def test_permission_denied_is_a_one_line_error(scores, capsys, monkeypatch, verb
     assert code == 1
     assert err[-1].startswith(f"probwrap {verb}: error: ") and "Permission denied" in err[-1]
     assert all("warning" in line or "step" in line for line in err[:-1])
+
+
+def test_apply_csv_to_parquet_keeps_numbers_as_numbers(scores, capsys):
+    assert _fit(scores) == 0
+    out = scores / "today.parquet"
+    assert main(["calibrate", "apply", "--map", str(scores / "map.json"), "--scores",
+                 str(scores / "held.csv"), "--score-column", "risk", "--out", str(out)]) == 0
+    frame = pd.read_parquet(out)
+    assert frame["risk"].dtype == np.float64
+    np.testing.assert_array_equal(frame["risk"].to_numpy(),
+                                  pd.read_csv(scores / "held.csv")["risk"].to_numpy())
