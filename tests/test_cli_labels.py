@@ -18,6 +18,15 @@ from probwrap.cli import main
 from probwrap.decision import search_cutoff
 
 
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
+    import probwrap.cli._common as common
+
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+
+
+
 @pytest.fixture(scope="module")
 def text_files(tmp_path_factory):
     root = tmp_path_factory.mktemp("labels")

@@ -18,6 +18,15 @@ from probwrap.cli import build_parser, main
 from probwrap.cli._common import MIN_RESAMPLES, numeric_column, read_table
 
 
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
+    import probwrap.cli._common as common
+
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+
+
+
 def run(capsys, *argv):
     code = main([str(a) for a in argv])
     out, err = capsys.readouterr()

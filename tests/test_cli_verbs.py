@@ -23,6 +23,15 @@ from probwrap.datasets import make_parcels
 from probwrap.decision import cutoff_interval, search_cutoff
 from probwrap.shift import PriorEstimator, em_prior, shift_test
 
+
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
+    import probwrap.cli._common as common
+
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+
+
 COSTS = {"fp": 3.0, "fn": 40.0}
 
 
@@ -298,7 +307,8 @@ def test_module_entry_point_in_a_subprocess(files):
     got = json.loads(proc.stdout)
     res = search_cutoff(files["p_held"], files["held"].target, COSTS, score_bounds=(0, 1))
     assert got["cutoff"] == res.cutoff
-    assert proc.stderr == ""  # quiet off a terminal: no progress bar
+    # off a terminal: no bar; at most plain step lines when the machine is slow
+    assert all(line.startswith("probwrap cutoff: step ") for line in proc.stderr.splitlines())
     bad = subprocess.run(
         [sys.executable, "-m", "probwrap.cli", "cutoff", "--scores", str(root / "nope.csv"),
          "--score-column", "risk", "--label-column", "damaged", "--cost-fp", "3",

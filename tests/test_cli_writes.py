@@ -23,6 +23,15 @@ import pytest
 from probwrap.cli import main
 from probwrap.cli._common import DataError, write_atomic, write_text
 
+
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
+    import probwrap.cli._common as common
+
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+
+
 posix_only = pytest.mark.skipif(os.name != "posix", reason="POSIX signals and resource limits")
 
 
@@ -176,8 +185,9 @@ def test_full_disk_leaves_the_previous_output_intact(scores, capsys, kind):
     proc = _run_limited(2048, argv)  # far less than any of these files
     assert proc.returncode == 1, proc.stderr
     assert "cannot be written" in proc.stderr and "File too large" in proc.stderr
-    assert proc.stderr.count("\n") == proc.stderr.count("warning:") + 1
-    assert "Traceback" not in proc.stderr
+    lines = [line for line in proc.stderr.splitlines()
+             if ": warning: " not in line and ": step " not in line]  # progress on a slow day
+    assert len(lines) == 1 and "Traceback" not in proc.stderr
     assert out.read_bytes() == previous
     assert _leftovers(scores) == []
     if kind == "map":  # the kept map still works
