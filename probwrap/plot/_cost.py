@@ -245,7 +245,7 @@ class CostCurveDisplay:
         if self.plugin_cutoff is not None:
             self.plugin_line_ = ax.axvline(
                 self.plugin_cutoff, color=PALETTE["plugin"], linestyle=(0, (5, 2)),
-                linewidth=1.2, label=f"Bayes plug-in cutoff {self.plugin_cutoff:.3f}",
+                linewidth=1.2, label=f"Bayes cutoff {self.plugin_cutoff:.3f}",
             )
         self.half_line_ = ax.axvline(0.5, color=PALETTE["half"], linestyle=":", linewidth=1.0,
                                      label="0.5 cutoff")
