@@ -75,6 +75,9 @@ class Recommendation:
     the unlabelled rows, with posteriors moved to the estimated prevalence (expected cost), when
     those were given (``basis == "unlabelled"``); otherwise the labelled rows (realised cost,
     ``basis == "labelled"``). ``within_capacity`` is judged on that same share.
+    ``base_cutoff`` is the binary cutoff chosen on the labelled rows, before any move to the
+    estimated prevalence and any capacity fallback; ``action_shares`` the share of each action
+    (several actions).
     """
 
     key: str
@@ -86,6 +89,7 @@ class Recommendation:
     basis: str
     within_capacity: bool | None = None
     action_shares: np.ndarray | None = None
+    base_cutoff: float | None = None
 
 
 class NoteLog:
@@ -94,8 +98,8 @@ class NoteLog:
     :meth:`compute` runs one computation with the warnings it raises recorded (narrowly: only
     inside that call), stores each distinct warning as a note about that number, and warns
     once more with the number named, so that a caller of the report sees it too. Exceptions
-    listed in ``expected`` become a note and ``None`` is returned; any other exception
-    propagates.
+    listed in ``expected`` become a note (and a ``UserWarning``) and ``None`` is returned; any
+    other exception propagates.
     """
 
     def __init__(self) -> None:
@@ -124,6 +128,8 @@ class NoteLog:
             warnings.warn(f"report, {about}: {message}", category, stacklevel=3)
         if failure is not None:
             self.add(key, about, "not computed", failure)
+            warnings.warn(f"report, {about}: not computed: {failure}", UserWarning,
+                          stacklevel=3)
         return result
 
     def about(self, *prefixes: str) -> list[ReportNote]:

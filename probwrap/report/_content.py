@@ -364,7 +364,8 @@ def collect_content(
                 # unlabelled rows uses the posteriors adjusted to the estimated prevalence
                 q_adj = adjust_to_prior(np.column_stack([1.0 - q, q]), [1 - src, src],
                                         [1 - tgt, tgt])
-                E = expected_costs(q_adj, content.cost_matrix)
+                E = _ScaledCosts(expected_costs(q_adj, content.cost_matrix / _cost_scale(
+                    content.cost_matrix)), _cost_scale(content.cost_matrix))
     if content.cost_matrix is not None:
         _recommend(content, y01, p, w, q, E, notes)
         if E is not None:
@@ -383,11 +384,28 @@ def _rule_row(key, label, cutoff, y01, p, matrix, w, cap) -> RuleRow:
                    within_capacity=None if cap is None else bool(share <= cap * (1 + 1e-12)))
 
 
-def _target_columns(row: RuleRow, q: np.ndarray, E: np.ndarray, cap: float | None) -> None:
+def _cost_scale(matrix: np.ndarray) -> float:
+    """A power of two near the largest cost: dividing by it is exact and keeps sums finite."""
+    top = float(np.max(np.abs(matrix)))
+    return 2.0 ** float(np.floor(np.log2(top))) if top > 0 else 1.0
+
+
+class _ScaledCosts:
+    """Expected costs of the unlabelled rows, held divided by ``scale`` (huge costs)."""
+
+    def __init__(self, values: np.ndarray, scale: float) -> None:
+        self.values, self.scale = values, scale
+
+    def mean_of(self, act: np.ndarray) -> float:
+        """Mean expected cost per row of the given actions, in the original units."""
+        return self.scale * float(self.values[np.arange(act.shape[0]), act].mean())
+
+
+def _target_columns(row: RuleRow, q: np.ndarray, E: _ScaledCosts, cap: float | None) -> None:
     """Share acted on and expected cost on the unlabelled rows; capacity judged there."""
     act = (q > _rule_cutoff(row.key, row.cutoff)).astype(np.intp)
     row.target_flagged_share = float(act.mean())
-    row.target_expected_cost = float(E[np.arange(E.shape[0]), act].mean())
+    row.target_expected_cost = E.mean_of(act)
     if cap is not None:
         row.within_capacity = bool(row.target_flagged_share <= cap * (1 + 1e-12))
 
@@ -397,14 +415,15 @@ def _paired_difference(y01, p, w, matrix, c_a, c_b) -> tuple[float, float]:
 
     Weighted mean with Kish's effective sample size for the standard error.
     """
-    cost_a = matrix[y01.astype(np.intp), (p > c_a).astype(np.intp)]
-    cost_b = matrix[y01.astype(np.intp), (p > c_b).astype(np.intp)]
+    scale = _cost_scale(matrix)
+    cost_a = matrix[y01.astype(np.intp), (p > c_a).astype(np.intp)] / scale
+    cost_b = matrix[y01.astype(np.intp), (p > c_b).astype(np.intp)] / scale
     d = cost_a - cost_b
     ww = np.ones_like(d) if w is None else w
     mean = float(np.average(d, weights=ww))
     n_eff = ww.sum() ** 2 / np.sum(ww**2)
     var = float(np.average((d - mean) ** 2, weights=ww))
-    return mean, float(np.sqrt(var / max(n_eff - 1.0, 1.0)))
+    return scale * mean, scale * float(np.sqrt(var / max(n_eff - 1.0, 1.0)))
 
 
 def _recommend(content, y01, p, w, q, E, notes) -> None:
@@ -442,6 +461,7 @@ def _recommend(content, y01, p, w, q, E, notes) -> None:
     else:
         reasons.append(f"The {name} is {content.cutoff_source}.")
     basis = "labelled"
+    base_cutoff = cutoff
     if q is not None and E is not None and content.shift_pvalue is not None:
         src, tgt = content.source_prevalence, content.target_prevalence
         if content.shift_pvalue < 0.01 and 0 < cutoff < 1:
@@ -477,7 +497,7 @@ def _recommend(content, y01, p, w, q, E, notes) -> None:
     if basis == "unlabelled":
         act = (q > cutoff).astype(np.intp)
         share = float(act.mean())
-        cost = float(E[np.arange(E.shape[0]), act].mean())
+        cost = E.mean_of(act)
     else:
         share = _flagged_share(p, cutoff, content.sample_weight)
         cost = cutoff_cost(y01, p, matrix, cutoff, content.sample_weight)
@@ -485,6 +505,7 @@ def _recommend(content, y01, p, w, q, E, notes) -> None:
         key=key, name=name, cutoff=cutoff, reasons=reasons, expected_cost=cost,
         acted_share=share, basis=basis,
         within_capacity=None if cap is None else bool(share <= cap * (1 + 1e-12)),
+        base_cutoff=base_cutoff,
     )
 
 

@@ -32,7 +32,9 @@ def _num(value: float | None, digits: int = 4) -> str:
     """A table cell holding a number, with the full value in ``data-value``."""
     if value is None or (isinstance(value, float) and not np.isfinite(value)):
         return '<td data-value="">&ndash;</td>'
-    return f'<td data-value="{float(value)!r}">{float(value):.{digits}f}</td>'
+    v = float(value)
+    shown = f"{v:.{digits}f}" if abs(v) < 1e9 else f"{v:.6g}"  # huge costs: no 300 digits
+    return f'<td data-value="{v!r}">{shown}</td>'
 
 
 def _share(value: float | None) -> str:
