@@ -28,13 +28,17 @@ def figure_to_svg(figure: Any, key: str) -> str:
     return re.sub(r'href="#([^"]+)"', lambda m: f'href="#{key}-{m.group(1)}"', svg)
 
 
+def _fmt(v: float, digits: int = 4) -> str:
+    """A number for the page: fixed digits, or 6 significant ones when huge (no 300 digits)."""
+    return f"{v:.{digits}f}" if abs(v) < 1e9 else f"{v:.6g}"
+
+
 def _num(value: float | None, digits: int = 4) -> str:
     """A table cell holding a number, with the full value in ``data-value``."""
     if value is None or (isinstance(value, float) and not np.isfinite(value)):
         return '<td data-value="">&ndash;</td>'
     v = float(value)
-    shown = f"{v:.{digits}f}" if abs(v) < 1e9 else f"{v:.6g}"  # huge costs: no 300 digits
-    return f'<td data-value="{v!r}">{shown}</td>'
+    return f'<td data-value="{v!r}">{_fmt(v, digits)}</td>'
 
 
 def _share(value: float | None) -> str:
@@ -94,7 +98,7 @@ def recommendation_box(c: Any) -> str:
     return (
         f'<aside class="pw-recommend" id="recommendation" data-rule="{_text(r.key)}">'
         f"<h2>Recommendation</h2><p>Use now: {rule}. Cost per row "
-        f'<b id="recommended-cost" data-value="{r.expected_cost!r}">{r.expected_cost:.4f}</b>, '
+        f'<b id="recommended-cost" data-value="{r.expected_cost!r}">{_fmt(r.expected_cost)}</b>, '
         f"{share} ({where}){cap}.</p>"
         f"<p>Why:</p><ul>{reasons}</ul>"
         '<p class="pw-note">A recommendation from these data only: check it against the '
