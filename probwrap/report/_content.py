@@ -37,6 +37,7 @@ from ._common import (
     class_index,
     metric_row,
 )
+from ._fast_metrics import FAST_BOOTSTRAP_ROWS, fast_metric_rows
 from ._general import collect_general_content
 
 __all__ = ["ReportContent", "MetricRow", "Recommendation", "RuleRow", "collect_content"]
@@ -127,6 +128,9 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes) -> list[Metric
         ("intercept", "calibration-in-the-large", intercept, {}, "0"),
     ]
     seed = int(rng.randint(2**31 - 1))
+    if p.shape[0] >= FAST_BOOTSTRAP_ROWS:
+        return fast_metric_rows(y, p, w, n_bins, n_resamples, level, seed, notes,
+                                {key: label for key, label, *_ in specs})
     return [metric_row(notes, key, label, fn, y, p, w, ideal, n_resamples, level, seed, **kw)
             for key, label, fn, kw, ideal in specs]
 
