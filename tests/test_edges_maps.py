@@ -205,11 +205,12 @@ def test_mixed_type_labels_in_metrics():
         brier_score(np.array([0, "a", 1], dtype=object), [0.2, 0.5, 0.9])
 
 
-@pytest.mark.parametrize("cls", BINARY_MAPS)
-@pytest.mark.parametrize("kwargs", [{}, {"smooth_targets": False}], ids=["default", "raw"])
+@pytest.mark.parametrize(
+    "cls, kwargs",
+    [(cls, {}) for cls in BINARY_MAPS] + [(PlattMap, {"smooth_targets": False})],
+    ids=[f"{cls.__name__}-default" for cls in BINARY_MAPS] + ["PlattMap-raw"],
+)
 def test_a_class_with_zero_total_weight_names_sample_weight(cls, kwargs):
-    if kwargs and cls is not PlattMap:
-        pytest.skip("only Platt has the option")
     s = [0.0, 1.0, 2.0, 3.0]
     with pytest.raises(ValueError, match=r"`sample_weight` is zero for every row of class 1"):
         cls(**kwargs).fit(s, [0, 1, 0, 1], sample_weight=[1.0, 0.0, 1.0, 0.0])

@@ -491,13 +491,18 @@ def cutoff_interval(
     from sklearn.utils import check_random_state
 
     rng = check_random_state(random_state)
-    rows = _SortedRows(s, bounds)
-    n = s.shape[0]
-    rc = _RowCosts(matrix, yi, w)
-    w1 = np.ones(n) if w is None else w
-    d_sorted = ((rc.c0 - rc.c1) * w1)[rows.order]
-    c1w_sorted = (rc.c1 * w1)[rows.order]
-    w_sorted = w1[rows.order]
+    w1 = np.ones(s.shape[0]) if w is None else w
+    # Weights are frequencies: a row of weight zero is absent, so resamples draw from the rows
+    # of positive weight only (a resample of zero-weight rows alone would have no cost curve).
+    present = np.flatnonzero(w1 > 0)
+    n = present.shape[0]
+    rows = _SortedRows(s[present], bounds)
+    rc = _RowCosts(matrix if matrix.ndim == 2 else matrix[present], yi[present],
+                   None if w is None else w[present])
+    wp = w1[present]
+    d_sorted = ((rc.c0 - rc.c1) * wp)[rows.order]
+    c1w_sorted = (rc.c1 * wp)[rows.order]
+    w_sorted = wp[rows.order]
     found = np.empty(int(n_resamples))
     for b in range(int(n_resamples)):
         # a row drawn c times gets c times its weight; counts are put in score order directly

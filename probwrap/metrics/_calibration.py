@@ -366,8 +366,8 @@ def brier_decomposition(
 
     With ``n_bins``, rows are grouped into bins (``strategy`` as in
     :func:`expected_calibration_error`) and each bin's mean forecast stands in for its forecasts.
-    The three terms then no longer add up to the score; the two within-bin terms of Stephenson
-    et al. (2008) close the gap exactly:
+    The three terms then no longer add up to the score; the two within-bin terms of Stephenson,
+    Coelho & Jolliffe (2008, Weather and Forecasting 23:752-757) close the gap exactly:
     ``brier = reliability - resolution + uncertainty + within_bin_variance - within_bin_covariance``
     where ``within_bin_variance = sum_i w_i (p_i - pbar_b(i))^2 / W`` and
     ``within_bin_covariance = 2 sum_i w_i (p_i - pbar_b(i)) (y_i - ybar_b(i)) / W``.
