@@ -16,7 +16,6 @@ from probwrap.decision import (
     realised_cost,
 )
 from probwrap.metrics import (
-    bootstrap_interval,
     brier_score,
     classwise_calibration_error,
     expected_calibration_error,
