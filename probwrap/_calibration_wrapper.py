@@ -40,11 +40,12 @@ CALIBRATION_METHODS: dict[str, type[CalibrationMap]] = {
 #: held-out rows times the number of binary maps (1, or k one-vs-rest) stays below this.
 _VENN_ABERS_AUTO_MAX_ROWS = 1_000
 
-#: ``method="auto"`` scores its candidates on at most this many rows times binary maps (1 for
-#: two classes, k one-vs-rest): above it, on a class-stratified sample of the rows.
-_SELECTION_MAX_CELLS = 100_000
+#: ``method="auto"`` scores its candidates on at most this many rows: above it, on a
+#: class-stratified sample of the rows (the chosen map is then fitted on all rows).
+_SELECTION_MAX_ROWS = 20_000
 
-#: ... and with its own folds, uses two instead of ``cv`` folds above this many rows times maps.
+#: ... and with its own folds, uses two instead of ``cv`` folds from this many rows times binary
+#: maps (1 for two classes, k one-vs-rest) on.
 _TWO_FOLD_CELLS = 20_000
 
 #: ``method="auto"`` stops scoring a candidate after the first fold when its loss there is more
@@ -148,7 +149,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
         classes the scores separate), why it could not be scored (the error of a failed fold
         fit), which warnings its fold fits raised, or why the chosen map was chosen without
         cross-validation; ``method_notes_["auto"]`` says when the candidates were scored on a
-        sample of the rows (above 100,000 held-out rows for two classes, 100,000 / k for k).
+        sample of the rows (above 20,000 held-out rows).
     clip_ : float
         The ``clip`` in use (chosen from the held-out probabilities when ``clip=None``).
     response_ : str
@@ -439,18 +440,17 @@ class CalibrationWrapper(HeldOutClassifierBase):
     # -- automatic choice ----------------------------------------------------------------------
     def _selection_rows(self, ho: HeldOutPredictions) -> np.ndarray | None:
         """Rows that score the candidates: all of them, or a class-stratified random sample of
-        ``_SELECTION_MAX_CELLS`` rows times maps when there are more (and the folds are not given as indices).
+        ``_SELECTION_MAX_ROWS`` rows when there are more (and the folds are not given as indices).
         The chosen map is always fitted on all rows."""
         y = ho.y_index
         n = y.shape[0]
-        n_maps = 1 if len(self.classes_) == 2 else len(self.classes_)
         own_folds = ho.n_folds >= 2 or isinstance(
             self.cv if self.cv is not None else 5, numbers.Integral
         )
-        if n * n_maps <= _SELECTION_MAX_CELLS or not own_folds:
+        if n <= _SELECTION_MAX_ROWS or not own_folds:
             return None
         rng = check_random_state(self.random_state)
-        frac = _SELECTION_MAX_CELLS / n_maps / n
+        frac = _SELECTION_MAX_ROWS / n
         keep = []
         for k in np.unique(y):
             rows = np.flatnonzero(y == k)
@@ -467,7 +467,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
             counts = np.bincount(y)
             n_splits = int(min(cv, max(2, counts[counts > 0].min())))
             n_maps = 1 if len(self.classes_) == 2 else len(self.classes_)
-            if y.shape[0] * n_maps > _TWO_FOLD_CELLS:
+            if y.shape[0] * n_maps >= _TWO_FOLD_CELLS:
                 # each half holds > 10,000 rows (times maps): two folds estimate the losses
                 # precisely enough, at two fifths of the cost of five
                 n_splits = 2

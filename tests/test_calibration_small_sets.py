@@ -292,7 +292,7 @@ def test_auto_stops_scoring_a_hopeless_candidate_after_the_first_fold():
 def test_auto_scores_a_sample_of_many_rows_and_fits_the_choice_on_all(monkeypatch):
     import probwrap._calibration_wrapper as cw
 
-    monkeypatch.setattr(cw, "_SELECTION_MAX_CELLS", 500)
+    monkeypatch.setattr(cw, "_SELECTION_MAX_ROWS", 500)
     table, y = _logistic_rows(2000, slope=2.0)
     X = np.arange(len(y)).reshape(-1, 1)
     model = CalibrationWrapper(FrozenEstimator(_Table(table).fit(X, y)), random_state=0).fit(X, y)
