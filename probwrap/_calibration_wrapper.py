@@ -21,6 +21,7 @@ from .calibration._isotonic import IsotonicMap
 from .calibration._logodds import DEFAULT_CLIP
 from .calibration._platt import PlattMap
 from .calibration._temperature import TemperatureMap
+from .calibration._vector_scaling import MatrixScalingMap, VectorScalingMap
 from .calibration._venn_abers import VennAbersMap
 
 __all__ = ["CalibrationWrapper", "CALIBRATION_METHODS"]
@@ -33,7 +34,17 @@ CALIBRATION_METHODS: dict[str, type[CalibrationMap]] = {
     "binning": BinningMap,
     "isotonic": IsotonicMap,
     "venn_abers": VennAbersMap,
+    "vector_scaling": VectorScalingMap,
+    "matrix_scaling": MatrixScalingMap,
 }
+
+#: Candidates of ``method="auto"`` that compete only for multiclass models: on binary log-odds
+#: vector scaling is Platt scaling with a shrunken intercept.
+_AUTO_MULTICLASS_ONLY = ("vector_scaling",)
+
+#: Methods that ``method="auto"`` leaves out unless named in ``candidates``: matrix scaling has
+#: k^2 + k - 1 parameters and needs many rows per class.
+_AUTO_EXCLUDED_BY_DEFAULT = ("matrix_scaling",)
 
 #: ``method="auto"`` leaves Venn-Abers out of its default candidates above this many rows.
 _VENN_ABERS_AUTO_MAX_ROWS = 20_000
@@ -70,7 +81,9 @@ class CalibrationWrapper(HeldOutClassifierBase):
         passed to :meth:`fit` then counts as held-out data.
     method : str or CalibrationMap, default="auto"
         ``"platt"``, ``"isotonic"``, ``"beta"``, ``"temperature"``, ``"binning"``,
-        ``"venn_abers"``, a map instance (cloned before fitting), or ``"auto"``. ``"auto"`` scores
+        ``"venn_abers"``, ``"vector_scaling"``, ``"matrix_scaling"`` (the last two multiclass
+        maps, see :class:`~probwrap.calibration.VectorScalingMap`), a map instance (cloned
+        before fitting), or ``"auto"``. ``"auto"`` scores
         every candidate map by cross-validated log loss on the held-out predictions and keeps the
         simplest map whose loss is within one standard error (of the paired per-row difference)
         of the best one, so a richer map must win by more than its cross-validation noise.
@@ -82,9 +95,11 @@ class CalibrationWrapper(HeldOutClassifierBase):
     random_state : int, RandomState or None, default=None
         Shuffling of the folds.
     candidates : sequence of str, default=None
-        Maps that ``"auto"`` chooses from. Default: all six, except that Venn–Abers is left out
-        above 20,000 held-out rows, where it agrees with isotonic regression to within about
-        1/n but costs far more to cross-validate.
+        Maps that ``"auto"`` chooses from. Default: all methods except matrix scaling (which
+        needs many rows per class), with vector scaling for multiclass models only (on binary
+        log-odds it is Platt scaling); Venn–Abers is left out above 20,000 held-out rows, where
+        it agrees with isotonic regression to within about 1/n but costs far more to
+        cross-validate.
     clip : float, default=1e-12
         Only for the parametric maps (Platt, beta, temperature) fitted on ``predict_proba``
         output: log-odds are clipped to ``±logit(1 - clip)`` (about ±27.6 by default, log-
@@ -343,6 +358,10 @@ class CalibrationWrapper(HeldOutClassifierBase):
 
     def _choose(self, ho: HeldOutPredictions, scores: np.ndarray):
         names = self._candidate_names()
+        if self.candidates is None:
+            names = [n for n in names if n not in _AUTO_EXCLUDED_BY_DEFAULT]
+            if scores.ndim == 1:
+                names = [n for n in names if n not in _AUTO_MULTICLASS_ONLY]
         if self.candidates is None and ho.y_index.shape[0] > _VENN_ABERS_AUTO_MAX_ROWS:
             # Beyond this size the Venn-Abers interval is narrower than 1/n and its merged
             # probability coincides with isotonic regression to that order, while its fit costs

@@ -8,6 +8,7 @@ from ._logodds import DEFAULT_CLIP, log_odds_to_proba, proba_to_log_odds, proba_
 from ._platt import PlattMap
 from ._serialize import map_from_dict, map_to_dict
 from ._temperature import TemperatureMap
+from ._vector_scaling import MatrixScalingMap, VectorScalingMap
 from ._venn_abers import VennAbersMap
 
 __all__ = [
@@ -16,9 +17,11 @@ __all__ = [
     "CalibrationMap",
     "DEFAULT_CLIP",
     "IsotonicMap",
+    "MatrixScalingMap",
     "NONPARAMETRIC",
     "PlattMap",
     "TemperatureMap",
+    "VectorScalingMap",
     "VennAbersMap",
     "log_odds_to_proba",
     "map_from_dict",

@@ -36,6 +36,7 @@ from ._binning import BinningMap
 from ._isotonic import IsotonicMap
 from ._platt import PlattMap
 from ._temperature import TemperatureMap
+from ._vector_scaling import MatrixScalingMap, VectorScalingMap
 from ._venn_abers import VennAbersMap
 
 __all__ = ["map_to_dict", "map_from_dict", "MAP_FORMAT", "MAP_SCHEMA_VERSION"]
@@ -46,7 +47,8 @@ MAP_FORMAT = "probwrap-map"
 MAP_SCHEMA_VERSION = 1
 
 #: method name -> (map class, constructor settings, fitted attributes with their kind).
-#: Kinds: "float" (a finite number), "int", "array" (a 1-d list of finite numbers).
+#: Kinds: "float" (a finite number), "int", "array" (a 1-d list of finite numbers), "matrix"
+#: (a 2-d list of lists of finite numbers).
 _SPECS: dict[str, tuple[type[CalibrationMap], tuple[str, ...], dict[str, str]]] = {
     "temperature": (TemperatureMap, (), {"temperature_": "float"}),
     "platt": (PlattMap, ("smooth_targets",), {"slope_": "float", "intercept_": "float"}),
@@ -67,6 +69,16 @@ _SPECS: dict[str, tuple[type[CalibrationMap], tuple[str, ...], dict[str, str]]] 
             "p0_between_": "array",
             "p1_between_": "array",
         },
+    ),
+    "vector_scaling": (
+        VectorScalingMap,
+        ("shrinkage", "smooth_targets"),
+        {"scales_": "array", "intercepts_": "array"},
+    ),
+    "matrix_scaling": (
+        MatrixScalingMap,
+        ("shrinkage", "smooth_targets"),
+        {"coef_": "matrix", "intercepts_": "array"},
     ),
 }
 
@@ -122,7 +134,8 @@ def map_to_dict(cal_map: CalibrationMap, **metadata: Any) -> dict[str, Any]:
     ----------
     cal_map : CalibrationMap
         A fitted :class:`PlattMap`, :class:`IsotonicMap`, :class:`BetaMap`,
-        :class:`TemperatureMap`, :class:`BinningMap` or :class:`VennAbersMap`.
+        :class:`TemperatureMap`, :class:`BinningMap`, :class:`VennAbersMap`,
+        :class:`VectorScalingMap` or :class:`MatrixScalingMap`.
     **metadata
         Extra JSON-ready facts kept under ``"metadata"`` (for example the scale of the input
         scores); :func:`map_from_dict` ignores them.
@@ -157,6 +170,11 @@ def map_to_dict(cal_map: CalibrationMap, **metadata: Any) -> dict[str, Any]:
             arr = np.asarray(value, dtype=float)
             if arr.ndim != 1 or not np.all(np.isfinite(arr)):
                 raise ValueError(f"`{attr}` of the map must be a 1-d array of finite numbers.")
+            fitted[attr] = arr.tolist()
+        elif kind == "matrix":
+            arr = np.asarray(value, dtype=float)
+            if arr.ndim != 2 or not np.all(np.isfinite(arr)):
+                raise ValueError(f"`{attr}` of the map must be a 2-d array of finite numbers.")
             fitted[attr] = arr.tolist()
         elif kind == "int":
             fitted[attr] = int(value)
@@ -248,6 +266,10 @@ def map_from_dict(description: Mapping[str, Any]) -> CalibrationMap:
                 arr = np.asarray(value, dtype=float)
                 if arr.ndim != 1:
                     raise ValueError
+            elif kind == "matrix":
+                arr = np.asarray(value, dtype=float)
+                if arr.ndim != 2:
+                    raise ValueError
             elif kind == "int":
                 if isinstance(value, bool) or not isinstance(value, numbers.Integral):
                     raise ValueError
@@ -257,7 +279,9 @@ def map_from_dict(description: Mapping[str, Any]) -> CalibrationMap:
                     raise ValueError
                 arr = float(value)
         except (TypeError, ValueError):
-            what = "a list of numbers" if kind == "array" else "a number"
+            what = {"array": "a list of numbers", "matrix": "a list of lists of numbers"}.get(
+                kind, "a number"
+            )
             raise ValueError(f"field 'fitted.{attr}' must be {what}; got {value!r}.") from None
         if not np.all(np.isfinite(arr)):
             raise ValueError(f"field 'fitted.{attr}' must hold finite numbers.")
@@ -312,5 +336,14 @@ def _check_shapes(method: str, m: Any) -> None:
             raise ValueError(
                 "field 'fitted.edges_' must hold one increasing edge fewer than there are bins."
             )
+    elif method in ("vector_scaling", "matrix_scaling"):
+        k = max(m.n_score_columns_, 2)  # binary log-odds are read as two logit columns
+        shapes = {"intercepts_": (k,)}
+        shapes["scales_" if method == "vector_scaling" else "coef_"] = (
+            (k,) if method == "vector_scaling" else (k, k)
+        )
+        for attr, shape in shapes.items():
+            if getattr(m, attr).shape != shape:
+                raise ValueError(f"field 'fitted.{attr}' must have shape {shape}.")
     elif method == "temperature" and not m.temperature_ > 0:
         raise ValueError("field 'fitted.temperature_' must be positive.")
