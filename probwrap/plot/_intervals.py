@@ -42,6 +42,8 @@ def wilson_interval(
     Returns
     -------
     low, high : ndarray
+        Exactly 0 (``low``) where ``successes`` is 0 and exactly 1 (``high``) where it equals
+        ``n``; always ``low <= successes / n <= high``.
 
     Examples
     --------
@@ -62,7 +64,14 @@ def wilson_interval(
     denom = 1.0 + z * z / m
     centre = (p + z * z / (2.0 * m)) / denom
     half = z * np.sqrt(p * (1.0 - p) / m + z * z / (4.0 * m * m)) / denom
-    return np.clip(centre - half, 0.0, 1.0), np.clip(centre + half, 0.0, 1.0)
+    # The closed form is exactly 0 at k = 0 and exactly 1 at k = n, but in floating point
+    # ``centre - half`` is then a few ulp off (e.g. 5.55e-17), which puts the bound on the
+    # wrong side of the observed frequency and makes error bars negative. Use the exact ends
+    # there, and keep p inside the interval (the score interval always contains p: the score
+    # statistic is 0 at p), so rounding can never move a bound past it.
+    low = np.where(p <= 0.0, 0.0, np.minimum(centre - half, p))
+    high = np.where(p >= 1.0, 1.0, np.maximum(centre + half, p))
+    return np.clip(low, 0.0, 1.0), np.clip(high, 0.0, 1.0)
 
 
 def consistency_band(
