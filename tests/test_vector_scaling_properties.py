@@ -110,11 +110,13 @@ def test_inputs_are_not_modified_and_pickle_and_json_round_trips(cls, data):
 
 @pytest.mark.parametrize("cls", MAPS)
 def test_scaling_the_scores_keeps_the_fit(cls):
-    # the penalty is measured in units of the score scale: multiplying every score by a
-    # constant gives the same probabilities
+    # the shrinkage of the per-class terms is measured in units of the score scale, so
+    # multiplying every score by a constant changes the probabilities only through the very
+    # weak pull toward the identity map (which does depend on the units): by less than 0.002
+    # here (the fitted map differs from the raw softmax of z by up to 0.15)
     rng = np.random.default_rng(0)
     z = rng.normal(size=(60, 4)) * 2
     y = np.argmax(z + rng.gumbel(size=z.shape), axis=1)
     a = cls().fit(z, y).predict(z)
     b = cls().fit(z * 50.0, y).predict(z * 50.0)
-    np.testing.assert_allclose(a, b, atol=1e-7)
+    np.testing.assert_allclose(a, b, atol=2e-3)
