@@ -7,6 +7,7 @@ read-only view that callers must not write to).
 
 from __future__ import annotations
 
+import math
 import numbers
 from typing import Any
 
@@ -19,6 +20,7 @@ __all__ = [
     "check_binary_labels",
     "check_sample_weight",
     "check_same_length",
+    "power_of_two_unit",
 ]
 
 
@@ -194,3 +196,17 @@ def check_sample_weight(sample_weight: Any, n: int, *, name: str = "sample_weigh
     if not np.any(sw > 0):
         raise ValueError(f"`{name}` is zero for every row; at least one weight must be positive.")
     return sw
+
+
+def power_of_two_unit(values: Any) -> float:
+    """A power of two ``u`` with ``max |values| / u`` in [1, 2) (1.0 for all-zero input).
+
+    Dividing by ``u`` is exact (barring underflow of entries far below the largest), so a
+    statistic that does not change when its inputs are scaled (weights in a weighted mean, a cost
+    matrix in a least-cost rule) can be computed on ``values / u`` without overflowing sums and
+    gives bit-identical results for ordinary inputs.
+    """
+    top = float(np.max(np.abs(values))) if np.size(values) else 0.0
+    if top == 0.0 or not math.isfinite(top):
+        return 1.0
+    return math.ldexp(1.0, math.frexp(top)[1] - 1)

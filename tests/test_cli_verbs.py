@@ -70,7 +70,7 @@ def test_calibrate_auto_agrees_with_the_wrapper_on_the_model(files, capsys):
         reloaded.predict(proba_to_log_odds(files["p_held"])),
         wrapper.predict_proba(held.data)[:, 1], rtol=1e-6, atol=1e-9,
     )
-    assert saved["metadata"]["score_scale"] == "proba"
+    assert saved["score_scale"] == "proba"
     assert set(saved["metadata"]["auto_log_loss"]) == set(wrapper.method_scores_)
 
 

@@ -102,7 +102,7 @@ def test_inputs_are_not_modified_and_pickle_and_json_round_trips(cls, data):
     probe = np.vstack([z, -z, 5.0 * z])
     again = pickle.loads(pickle.dumps(m))
     np.testing.assert_array_equal(m.predict(probe), again.predict(probe))
-    d = json.loads(json.dumps(map_to_dict(m), allow_nan=False))
+    d = json.loads(json.dumps(map_to_dict(m, score_scale="log-odds"), allow_nan=False))
     rebuilt = map_from_dict(d)
     assert type(rebuilt) is cls and rebuilt.get_params() == m.get_params()
     np.testing.assert_array_equal(m.predict(probe), rebuilt.predict(probe))

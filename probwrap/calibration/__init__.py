@@ -6,7 +6,7 @@ from ._binning import BinningMap
 from ._isotonic import IsotonicMap
 from ._logodds import DEFAULT_CLIP, log_odds_to_proba, proba_to_log_odds, proba_to_log_proba
 from ._platt import PlattMap
-from ._serialize import map_from_dict, map_to_dict
+from ._serialize import MAP_SCORE_SCALES, map_from_dict, map_score_scale, map_to_dict
 from ._temperature import TemperatureMap
 from ._vector_scaling import MatrixScalingMap, VectorScalingMap
 from ._venn_abers import VennAbersMap
@@ -17,6 +17,7 @@ __all__ = [
     "CalibrationMap",
     "DEFAULT_CLIP",
     "IsotonicMap",
+    "MAP_SCORE_SCALES",
     "MatrixScalingMap",
     "NONPARAMETRIC",
     "PlattMap",
@@ -25,6 +26,7 @@ __all__ = [
     "VennAbersMap",
     "log_odds_to_proba",
     "map_from_dict",
+    "map_score_scale",
     "map_to_dict",
     "proba_to_log_odds",
     "proba_to_log_proba",

@@ -5,20 +5,32 @@ write it and nothing executable is ever read back (unlike pickle). Floats are ke
 floats, whose ``repr`` (what ``json`` writes) reads back to the identical double, so a map
 rebuilt from its dictionary predicts exactly what the fitted map predicts.
 
-Layout (``schema_version`` 1)::
+Layout (``schema_version`` 2)::
 
     {
       "format": "probwrap-map",
-      "schema_version": 1,
+      "schema_version": 2,
       "probwrap_version": "0.1.0",
+      "score_scale": "proba",             # what the saved scores are: "proba" or "log-odds"
       "method": "platt",                  # one of MAP_NAMES
       "settings": {"smooth_targets": true},   # constructor arguments
       "fitted": {"slope_": 1.7, "intercept_": -0.2},   # fitted attributes
       "classes": [0, 1],
       "classes_kind": "int",              # "int", "float", "bool" or "str"
       "n_score_columns": 1,               # 1 for binary log-odds, k for (n, k) scores
-      "metadata": {...}                   # free-form, JSON-ready; ignored when loading
+      "metadata": {...}                   # free-form JSON object; checked, otherwise ignored
     }
+
+``score_scale`` is required: a map always takes log-odds, but a file is applied to a column of
+scores, and probabilities read as log-odds give silently wrong answers. ``"proba"`` means the
+scores are positive-class probabilities, turned into log-odds with
+:func:`~probwrap.calibration.proba_to_log_odds` before the map; ``"log-odds"`` means they are
+given to the map as they are. Version 1 files kept it (when at all) as ``metadata.score_scale``.
+
+Reading checks meaning as well as shape: fitted tables must be finite, probabilities in [0, 1],
+isotonic and Venn-Abers tables non-decreasing with ``p0 <= p1``, beta coefficients ``a, b >= 0``
+and the temperature positive, so a hand-edited or damaged file is refused with a message naming
+the field instead of being applied.
 """
 
 from __future__ import annotations
@@ -37,14 +49,32 @@ from ._isotonic import IsotonicMap
 from ._platt import PlattMap
 from ._temperature import TemperatureMap
 from ._vector_scaling import MatrixScalingMap, VectorScalingMap
+from ._vector_scaling import _check_settings as _check_scaling_settings
 from ._venn_abers import VennAbersMap
 
-__all__ = ["map_to_dict", "map_from_dict", "MAP_FORMAT", "MAP_SCHEMA_VERSION"]
+__all__ = [
+    "map_to_dict",
+    "map_from_dict",
+    "map_score_scale",
+    "MAP_FORMAT",
+    "MAP_SCHEMA_VERSION",
+    "MAP_SCORE_SCALES",
+]
 
 #: value of the ``"format"`` field
 MAP_FORMAT = "probwrap-map"
 #: version of the layout written by :func:`map_to_dict`
-MAP_SCHEMA_VERSION = 1
+MAP_SCHEMA_VERSION = 2
+#: versions :func:`map_from_dict` reads
+_READABLE_VERSIONS = (1, 2)
+#: accepted values of the ``"score_scale"`` field
+MAP_SCORE_SCALES = ("proba", "log-odds")
+#: deepest nesting of lists and objects accepted in a description (the layout itself needs 3)
+_MAX_DEPTH = 64
+#: most values accepted under ``metadata`` (it is free-form, not a data store)
+_MAX_NODES = 1_000_000
+#: tolerance for monotone tables and ``p0 <= p1`` (floating-point rounding of the fit)
+_ORDER_TOL = 1e-12
 
 #: method name -> (map class, constructor settings, fitted attributes with their kind).
 #: Kinds: "float" (a finite number), "int", "array" (a 1-d list of finite numbers), "matrix"
@@ -127,7 +157,50 @@ def _classes_kind(classes: np.ndarray) -> str:
     )
 
 
-def map_to_dict(cal_map: CalibrationMap, **metadata: Any) -> dict[str, Any]:
+def _check_scale(value: Any, where: str) -> str:
+    if not isinstance(value, str) or value not in MAP_SCORE_SCALES:
+        raise ValueError(f"{where} must be one of {list(MAP_SCORE_SCALES)}; got {value!r}.")
+    return value
+
+
+def _check_plain_tree(value: Any, where: str) -> None:
+    """Refuse what JSON cannot hold as written: non-finite or odd numbers, non-string keys, and
+    nesting deeper than ``_MAX_DEPTH`` (which also catches a structure that contains itself).
+    Walked with an explicit stack, so no depth can exhaust Python's recursion limit."""
+    stack: list[tuple[Any, str, int]] = [(value, where, 0)]
+    visited = 0
+    while stack:
+        item, path, depth = stack.pop()
+        visited += 1
+        if visited > _MAX_NODES:
+            raise ValueError(f"{where} holds more than {_MAX_NODES} values.")
+        if item is None or isinstance(item, (bool, str, numbers.Integral)):
+            continue
+        if isinstance(item, numbers.Real):
+            if not math.isfinite(float(item)):
+                raise ValueError(f"{path} must hold finite numbers; got {float(item)!r}.")
+            continue
+        if not isinstance(item, (Mapping, list, tuple)):
+            raise ValueError(
+                f"{path} holds a value of type {type(item).__name__}; only objects, lists, "
+                "strings, numbers, booleans and null can be saved."
+            )
+        if depth >= _MAX_DEPTH:
+            raise ValueError(
+                f"{where} is nested more than {_MAX_DEPTH} levels deep (or contains itself)."
+            )
+        if isinstance(item, Mapping):
+            for key, sub in item.items():
+                if not isinstance(key, str):
+                    raise ValueError(f"{path} has a key {key!r} that is not a string.")
+                stack.append((sub, f"{path}.{key}", depth + 1))
+        else:
+            stack.extend((sub, f"{path}[{i}]", depth + 1) for i, sub in enumerate(item))
+
+
+def map_to_dict(
+    cal_map: CalibrationMap, *, score_scale: str | None = None, **metadata: Any
+) -> dict[str, Any]:
     """Describe a fitted calibration map as a JSON-ready dictionary.
 
     Parameters
@@ -136,9 +209,15 @@ def map_to_dict(cal_map: CalibrationMap, **metadata: Any) -> dict[str, Any]:
         A fitted :class:`PlattMap`, :class:`IsotonicMap`, :class:`BetaMap`,
         :class:`TemperatureMap`, :class:`BinningMap`, :class:`VennAbersMap`,
         :class:`VectorScalingMap` or :class:`MatrixScalingMap`.
+    score_scale : {"proba", "log-odds"}
+        Required. What the scores that the saved map will be applied to are: ``"proba"`` for
+        positive-class probabilities (turned into log-odds with
+        :func:`~probwrap.calibration.proba_to_log_odds` before the map, as the map was fitted),
+        ``"log-odds"`` for scores given to the map as they are. Multiclass maps take logits or
+        log-probabilities; use ``"log-odds"`` for them.
     **metadata
-        Extra JSON-ready facts kept under ``"metadata"`` (for example the scale of the input
-        scores); :func:`map_from_dict` ignores them.
+        Extra JSON-ready facts kept under ``"metadata"`` (numbers must be finite; nesting at
+        most 64 levels); :func:`map_from_dict` checks and otherwise ignores them.
 
     Returns
     -------
@@ -150,9 +229,9 @@ def map_to_dict(cal_map: CalibrationMap, **metadata: Any) -> dict[str, Any]:
     >>> import json
     >>> from probwrap.calibration import PlattMap, map_to_dict, map_from_dict
     >>> m = PlattMap().fit([-2.0, -1.0, 0.0, 1.0, 2.0, 3.0], [0, 0, 1, 0, 1, 1])
-    >>> d = map_to_dict(m, note="demo")
-    >>> d["method"], sorted(d["fitted"])
-    ('platt', ['intercept_', 'slope_'])
+    >>> d = map_to_dict(m, score_scale="log-odds", note="demo")
+    >>> d["method"], d["score_scale"], sorted(d["fitted"])
+    ('platt', 'log-odds', ['intercept_', 'slope_'])
     >>> again = map_from_dict(json.loads(json.dumps(d)))
     >>> bool((again.predict([0.5, 4.0]) == m.predict([0.5, 4.0])).all())
     True
@@ -161,6 +240,13 @@ def map_to_dict(cal_map: CalibrationMap, **metadata: Any) -> dict[str, Any]:
     cls, setting_names, fitted_kinds = _SPECS[method]
     if not hasattr(cal_map, "classes_"):
         raise ValueError(f"`cal_map` ({cls.__name__}) is not fitted; call fit first.")
+    if score_scale is None:
+        raise ValueError(
+            f"`score_scale` is required: one of {list(MAP_SCORE_SCALES)}, saying whether the "
+            "scores the saved map will be applied to are probabilities or log-odds."
+        )
+    _check_scale(score_scale, "`score_scale`")
+    _check_plain_tree(dict(metadata), "`metadata`")
     from probwrap import __version__
 
     fitted: dict[str, Any] = {}
@@ -186,6 +272,7 @@ def map_to_dict(cal_map: CalibrationMap, **metadata: Any) -> dict[str, Any]:
         "format": MAP_FORMAT,
         "schema_version": MAP_SCHEMA_VERSION,
         "probwrap_version": __version__,
+        "score_scale": score_scale,
         "method": method,
         "settings": {
             name: _plain(getattr(cal_map, name), f"setting `{name}`") for name in setting_names
@@ -200,19 +287,107 @@ def map_to_dict(cal_map: CalibrationMap, **metadata: Any) -> dict[str, Any]:
     return out
 
 
-def _need(d: Mapping[str, Any], key: str, where: str = "") -> Any:
-    if key not in d:
-        raise ValueError(f"the map description has no field '{where}{key}'.")
-    return d[key]
+def map_score_scale(description: Mapping[str, Any], *, score_scale: str | None = None) -> str:
+    """The score scale a saved map is to be applied on.
+
+    Parameters
+    ----------
+    description : mapping
+        As written by :func:`map_to_dict`.
+    score_scale : {"proba", "log-odds"}, default=None
+        The scale to use when the description does not state one (a version 1 file without
+        ``metadata.score_scale``, or a hand-written one). When the description does state one,
+        it must agree.
+
+    Returns
+    -------
+    str
+        ``"proba"`` or ``"log-odds"``.
+
+    Raises
+    ------
+    ValueError
+        When the description states no scale and none is given, when either is not one of
+        ``MAP_SCORE_SCALES``, or when the two disagree.
+
+    Examples
+    --------
+    >>> from probwrap.calibration import PlattMap, map_to_dict, map_score_scale
+    >>> d = map_to_dict(PlattMap().fit([-1.0, 0.0, 1.0, 2.0], [0, 1, 0, 1]), score_scale="proba")
+    >>> map_score_scale(d)
+    'proba'
+    >>> del d["score_scale"]
+    >>> map_score_scale(d, score_scale="log-odds")
+    'log-odds'
+    """
+    if not isinstance(description, Mapping):
+        raise ValueError(
+            f"a map description must be a mapping (a JSON object); got {type(description).__name__}."
+        )
+    if score_scale is not None:
+        _check_scale(score_scale, "`score_scale`")
+    stated, field = description.get("score_scale"), "score_scale"
+    metadata = description.get("metadata")
+    if stated is None and description.get("schema_version") == 1 and isinstance(metadata, Mapping):
+        # version 1 kept the scale (when the command line wrote the file) among the metadata
+        stated, field = metadata.get("score_scale"), "metadata.score_scale"
+    if stated is None:
+        if score_scale is None:
+            raise ValueError(
+                "the map description has no field 'score_scale': it does not say whether the "
+                f"scores are probabilities or log-odds; state it (one of {list(MAP_SCORE_SCALES)})."
+            )
+        return score_scale
+    _check_scale(stated, f"field {field!r}")
+    if score_scale is not None and score_scale != stated:
+        raise ValueError(
+            f"`score_scale` is {score_scale!r} but field {field!r} of the map says {stated!r}."
+        )
+    return stated
 
 
-def map_from_dict(description: Mapping[str, Any]) -> CalibrationMap:
+def _numbers(value: Any, where: str) -> np.ndarray:
+    """A 1-d list of finite numbers (booleans and numeric strings refused) as a float array."""
+    if not isinstance(value, (list, tuple)) or any(isinstance(v, (bool, str)) for v in value):
+        raise ValueError(f"field '{where}' must be a list of numbers; got {_short(value)}.")
+    try:
+        arr = np.asarray(value, dtype=float)
+    except (TypeError, ValueError, OverflowError):
+        raise ValueError(f"field '{where}' must be a list of numbers; got {_short(value)}.") from None
+    if arr.ndim != 1:
+        raise ValueError(f"field '{where}' must be a flat list of numbers.")
+    if not np.all(np.isfinite(arr)):
+        raise ValueError(f"field '{where}' must hold finite numbers.")
+    return arr
+
+
+def _matrix(value: Any, where: str) -> np.ndarray:
+    """A non-empty list of equally long lists of finite numbers as a 2-d float array."""
+    if not isinstance(value, (list, tuple)) or not value:
+        raise ValueError(f"field '{where}' must be a list of lists of numbers; got {_short(value)}.")
+    rows = [_numbers(row, f"{where}[{i}]") for i, row in enumerate(value)]
+    if len({row.shape[0] for row in rows}) != 1:
+        raise ValueError(f"field '{where}' must hold rows of equal length.")
+    return np.vstack(rows)
+
+
+def _short(value: Any) -> str:
+    text = repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+def map_from_dict(
+    description: Mapping[str, Any], *, score_scale: str | None = None
+) -> CalibrationMap:
     """Rebuild a fitted calibration map from :func:`map_to_dict`'s dictionary.
 
     Parameters
     ----------
     description : mapping
         As written by :func:`map_to_dict` (possibly after a JSON round trip).
+    score_scale : {"proba", "log-odds"}, default=None
+        Only for descriptions that do not state their score scale (see
+        :func:`map_score_scale`); a description without one is refused unless it is given.
 
     Returns
     -------
@@ -223,13 +398,16 @@ def map_from_dict(description: Mapping[str, Any]) -> CalibrationMap:
     ------
     ValueError
         When the description is not a probwrap map, has an unknown ``schema_version`` or
-        ``method``, or misses or mangles a field; the message names the field.
+        ``method``, states no score scale, or misses or mangles a field, or when a fitted table
+        makes no sense as a calibration map (values outside [0, 1], a decreasing isotonic or
+        Venn-Abers table, ``p0 > p1``, a negative beta coefficient, a non-positive temperature);
+        the message names the field.
 
     Examples
     --------
     >>> from probwrap.calibration import IsotonicMap, map_to_dict, map_from_dict
     >>> m = IsotonicMap().fit([-1.0, 0.0, 1.0, 2.0], [0, 1, 0, 1])
-    >>> map_from_dict(map_to_dict(m)).predict([1.5])
+    >>> map_from_dict(map_to_dict(m, score_scale="log-odds")).predict([1.5])
     array([0.75])
     """
     if not isinstance(description, Mapping):
@@ -238,65 +416,88 @@ def map_from_dict(description: Mapping[str, Any]) -> CalibrationMap:
         )
     if description.get("format") != MAP_FORMAT:
         raise ValueError(
-            f"field 'format' must be {MAP_FORMAT!r}; got {description.get('format')!r} (is this "
-            "a probwrap map file?)."
+            f"field 'format' must be {MAP_FORMAT!r}; got {_short(description.get('format'))} (is "
+            "this a probwrap map file?)."
         )
     version = _need(description, "schema_version")
-    if version != MAP_SCHEMA_VERSION:
+    if isinstance(version, bool) or version not in _READABLE_VERSIONS:
         raise ValueError(
-            f"field 'schema_version' is {version!r}; this probwrap reads version "
-            f"{MAP_SCHEMA_VERSION}."
+            f"field 'schema_version' is {_short(version)}; this probwrap reads versions "
+            f"{list(_READABLE_VERSIONS)}."
         )
+    if "metadata" in description:
+        if not isinstance(description["metadata"], Mapping):
+            raise ValueError(
+                "field 'metadata' must be a JSON object; got "
+                f"{type(description['metadata']).__name__}."
+            )
+        _check_plain_tree(description["metadata"], "field 'metadata'")
+    map_score_scale(description, score_scale=score_scale)
     method = _need(description, "method")
-    if method not in _SPECS:
-        raise ValueError(f"field 'method' must be one of {list(_SPECS)}; got {method!r}.")
+    if not isinstance(method, str) or method not in _SPECS:
+        raise ValueError(f"field 'method' must be one of {list(_SPECS)}; got {_short(method)}.")
     cls, setting_names, fitted_kinds = _SPECS[method]
     settings = _need(description, "settings")
     fitted = _need(description, "fitted")
     if not isinstance(settings, Mapping) or not isinstance(fitted, Mapping):
         raise ValueError("fields 'settings' and 'fitted' must be JSON objects.")
-    unknown = sorted(set(settings) - set(setting_names))
+    unknown = sorted(str(k) for k in set(settings) - set(setting_names))
     if unknown:
         raise ValueError(f"field 'settings' has unknown entries {unknown} for method {method!r}.")
+    for name in setting_names:
+        if name in settings:
+            value = settings[name]
+            if not (value is None or isinstance(value, (bool, str, numbers.Real))) or (
+                isinstance(value, float) and not math.isfinite(value)
+            ):
+                raise ValueError(f"field 'settings.{name}' must be a plain value; got {_short(value)}.")
     cal_map = cls(**{name: settings[name] for name in setting_names if name in settings})
+    _check_settings(method, cal_map)
     for attr, kind in fitted_kinds.items():
         value = _need(fitted, attr, "fitted.")
-        try:
-            if kind == "array":
-                arr = np.asarray(value, dtype=float)
-                if arr.ndim != 1:
-                    raise ValueError
-            elif kind == "matrix":
-                arr = np.asarray(value, dtype=float)
-                if arr.ndim != 2:
-                    raise ValueError
-            elif kind == "int":
-                if isinstance(value, bool) or not isinstance(value, numbers.Integral):
-                    raise ValueError
-                arr = int(value)
-            else:
-                if isinstance(value, bool) or not isinstance(value, numbers.Real):
-                    raise ValueError
-                arr = float(value)
-        except (TypeError, ValueError):
-            what = {"array": "a list of numbers", "matrix": "a list of lists of numbers"}.get(
-                kind, "a number"
-            )
-            raise ValueError(f"field 'fitted.{attr}' must be {what}; got {value!r}.") from None
-        if not np.all(np.isfinite(arr)):
+        if kind == "array":
+            setattr(cal_map, attr, _numbers(value, f"fitted.{attr}"))
+            continue
+        if kind == "matrix":
+            setattr(cal_map, attr, _matrix(value, f"fitted.{attr}"))
+            continue
+        if kind == "int":
+            if isinstance(value, bool) or not isinstance(value, numbers.Integral):
+                raise ValueError(f"field 'fitted.{attr}' must be a whole number; got {_short(value)}.")
+            setattr(cal_map, attr, int(value))
+            continue
+        if isinstance(value, bool) or not isinstance(value, numbers.Real):
+            raise ValueError(f"field 'fitted.{attr}' must be a number; got {_short(value)}.")
+        if not math.isfinite(float(value)):
             raise ValueError(f"field 'fitted.{attr}' must hold finite numbers.")
-        setattr(cal_map, attr, arr)
+        setattr(cal_map, attr, float(value))
     kinds = {"int": np.int64, "float": float, "bool": bool, "str": str}
+    kind_types = {
+        "int": numbers.Integral, "float": numbers.Real, "bool": bool, "str": str,
+    }
     classes_kind = _need(description, "classes_kind")
-    if classes_kind not in kinds:
-        raise ValueError(f"field 'classes_kind' must be one of {list(kinds)}; got {classes_kind!r}.")
+    if not isinstance(classes_kind, str) or classes_kind not in kinds:
+        raise ValueError(
+            f"field 'classes_kind' must be one of {list(kinds)}; got {_short(classes_kind)}."
+        )
     classes = _need(description, "classes")
     if not isinstance(classes, list) or len(classes) < 2:
         raise ValueError("field 'classes' must be a list of at least two labels.")
+    for c in classes:
+        ok = isinstance(c, kind_types[classes_kind]) and (
+            classes_kind == "bool" or not isinstance(c, bool)
+        )
+        if not ok or (isinstance(c, float) and not math.isfinite(c)):
+            raise ValueError(
+                f"field 'classes' must hold {classes_kind} labels (field 'classes_kind'); got "
+                f"{_short(c)}."
+            )
     cal_map.classes_ = np.asarray(classes, dtype=kinds[classes_kind])
+    if np.unique(cal_map.classes_).shape[0] != len(classes):
+        raise ValueError("field 'classes' must not repeat a label.")
     n_cols = _need(description, "n_score_columns")
     if isinstance(n_cols, bool) or not isinstance(n_cols, int) or n_cols < 1:
-        raise ValueError(f"field 'n_score_columns' must be a positive integer; got {n_cols!r}.")
+        raise ValueError(f"field 'n_score_columns' must be a positive integer; got {_short(n_cols)}.")
     if n_cols == 1 and len(classes) != 2:
         raise ValueError("field 'classes' must hold two labels for a binary map.")
     if n_cols > 1 and (len(classes) != n_cols or not cls.supports_multiclass):
@@ -307,7 +508,88 @@ def map_from_dict(description: Mapping[str, Any]) -> CalibrationMap:
     cal_map.n_score_columns_ = n_cols
     cal_map.n_classes_ = len(classes)
     _check_shapes(method, cal_map)
+    _check_meaning(method, cal_map)
     return cal_map
+
+
+def _check_settings(method: str, m: Any) -> None:
+    """Constructor settings as the map's own fit would accept them."""
+    if method == "platt" and not isinstance(m.smooth_targets, bool):
+        raise ValueError(
+            f"field 'settings.smooth_targets' must be true or false; got {m.smooth_targets!r}."
+        )
+    if method in ("vector_scaling", "matrix_scaling"):
+        try:
+            _check_scaling_settings(m)
+        except ValueError as exc:
+            raise ValueError(f"field 'settings': {exc}") from None
+    if method == "binning":
+        try:
+            m._check_params()
+        except ValueError as exc:
+            raise ValueError(f"field 'settings': {exc}") from None
+
+
+def _check_probabilities(m: Any, attrs: tuple[str, ...]) -> None:
+    for attr in attrs:
+        values = getattr(m, attr)
+        if values.size and (values.min() < 0.0 or values.max() > 1.0):
+            raise ValueError(
+                f"field 'fitted.{attr}' must hold probabilities in [0, 1]; got values from "
+                f"{float(values.min()):.6g} to {float(values.max()):.6g}."
+            )
+
+
+def _check_non_decreasing(values: np.ndarray, field: str) -> None:
+    drop = np.flatnonzero(np.diff(values) < -_ORDER_TOL)
+    if drop.size:
+        i = int(drop[0])
+        raise ValueError(
+            f"field {field} must be non-decreasing (a calibration map never gives a higher score "
+            f"a lower probability); entry {i + 1} is {float(values[i + 1]):.6g} after "
+            f"{float(values[i]):.6g}."
+        )
+
+
+def _check_meaning(method: str, m: Any) -> None:
+    """Fitted tables must describe a calibration map: probabilities, in the right order."""
+    if method == "isotonic":
+        _check_probabilities(m, ("values_",))
+        _check_non_decreasing(m.values_, "'fitted.values_'")
+    elif method == "venn_abers":
+        _check_probabilities(m, ("p0_at_", "p1_at_", "p0_between_", "p1_between_"))
+        for where in ("at_", "between_"):
+            gap = getattr(m, f"p0_{where}") - getattr(m, f"p1_{where}")
+            if np.any(gap > _ORDER_TOL):
+                i = int(np.argmax(gap))
+                raise ValueError(
+                    f"fields 'fitted.p0_{where}' and 'fitted.p1_{where}' must satisfy p0 <= p1; "
+                    f"entry {i} has p0 = {float(getattr(m, f'p0_{where}')[i]):.6g} > p1 = "
+                    f"{float(getattr(m, f'p1_{where}')[i]):.6g}."
+                )
+        for p in ("p0", "p1"):
+            # below all thresholds, at the first, between the first two, at the second, ...
+            seq = np.empty(2 * m.thresholds_.shape[0] + 1)
+            seq[0::2] = getattr(m, f"{p}_between_")
+            seq[1::2] = getattr(m, f"{p}_at_")
+            _check_non_decreasing(seq, f"'fitted.{p}_between_' / 'fitted.{p}_at_' (interleaved)")
+    elif method == "binning":
+        _check_probabilities(m, ("values_",))
+        if np.any(m.bin_weights_ < 0):
+            raise ValueError("field 'fitted.bin_weights_' must hold non-negative weights.")
+    elif method == "beta":
+        for attr in ("a_", "b_"):
+            if getattr(m, attr) < 0:
+                raise ValueError(
+                    f"field 'fitted.{attr}' must be >= 0 (beta calibration keeps a, b >= 0 so the "
+                    f"map is non-decreasing); got {getattr(m, attr)!r}."
+                )
+
+
+def _need(d: Mapping[str, Any], key: str, where: str = "") -> Any:
+    if key not in d:
+        raise ValueError(f"the map description has no field '{where}{key}'.")
+    return d[key]
 
 
 def _check_shapes(method: str, m: Any) -> None:

@@ -257,9 +257,9 @@ def load_map(path: str | Path) -> tuple[Any, dict[str, Any]]:
 
 def _apply(args: argparse.Namespace) -> int:
     cal_map, description = load_map(args.map)
-    scale = description.get("metadata", {}).get("score_scale", "log-odds")
-    if scale not in SCALES:
-        raise DataError(f"{args.map}: field 'metadata.score_scale' must be one of {SCALES}")
+    from probwrap.calibration import map_score_scale
+
+    scale = map_score_scale(description)  # load_map has refused a file without a valid scale
     frame = read_table(args.scores)
     scores = read_scores(frame, args.score_column, args.scores, scale=scale)
     if args.output_column in frame.columns:

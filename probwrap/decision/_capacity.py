@@ -7,7 +7,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_sample_weight, check_scores
+from .._validation import check_sample_weight, check_scores, power_of_two_unit
 from ._cutoff import _SortedRows, check_capacity
 
 __all__ = ["ActionBudget", "action_savings", "fit_action_budget", "budget_actions"]
@@ -125,10 +125,13 @@ def fit_action_budget(
     if cap is None:
         raise ValueError("`capacity` must be a share of rows in (0, 1]; got None.")
     w = check_sample_weight(sample_weight, E.shape[0])
+    w = w / power_of_two_unit(w)  # shares are scale-free; this keeps the sums finite
+    unit = power_of_two_unit(E)  # so are the ranks of the savings: no overflow in differences
+    Eu = E / unit
     total = w.sum()
-    best = np.argmin(E, axis=1)
+    best = np.argmin(Eu, axis=1)
     mask = best == a
-    saving = np.delete(E, a, axis=1).min(axis=1) - E[:, a]
+    saving = np.delete(Eu, a, axis=1).min(axis=1) - Eu[:, a]
     if w[mask].sum() <= cap * total * (1 + 1e-12):
         return ActionBudget(a, cap, 0.0, float(w[mask].sum() / total), False)
     rows = _SortedRows(saving[mask], None)
@@ -136,4 +139,6 @@ def fit_action_budget(
     _, flagged, _ = rows.curve(np.zeros(wm.shape[0]), 0.0, wm[rows.order])
     share = flagged / total
     j = int(np.argmax(share <= cap * (1 + 1e-12)))
-    return ActionBudget(a, cap, float(rows.mid[j]), float(share[j]), True)
+    # rows saving at least the threshold keep the action: it must lie in (lower, upper]
+    threshold = rows.mid[j] if rows.mid[j] > rows.lower[j] else rows.upper[j]
+    return ActionBudget(a, cap, float(threshold * unit), float(share[j]), True)

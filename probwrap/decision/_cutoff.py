@@ -9,12 +9,12 @@ O(n log n) and no grid is involved.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
 
-from .._validation import check_same_length, check_sample_weight, check_scores
+from .._validation import check_same_length, check_sample_weight, check_scores, power_of_two_unit
 from ._costs import _resolve_costs
 
 __all__ = [
@@ -136,6 +136,26 @@ def _binary_targets(y: Any, n: int) -> np.ndarray:
     return arr.astype(np.intp)
 
 
+def _middle(lo: Any, hi: Any) -> Any:
+    """Midpoints of ``[lo, hi)`` that neither overflow (``lo + hi`` can) nor round up to ``hi``
+    (which they do between adjacent doubles; ``lo`` itself is then the only value inside)."""
+    lo, hi = np.asarray(lo, dtype=float), np.asarray(hi, dtype=float)
+    with np.errstate(over="ignore", invalid="ignore"):
+        d = hi - lo
+        mid = np.where(np.isfinite(d), lo + 0.5 * d, 0.5 * lo + 0.5 * hi)
+    return np.where((mid >= hi) & (hi > lo), lo, mid)
+
+
+def _beyond(x: float, step: float, direction: float) -> float:
+    """A finite value strictly beyond ``x`` (above for ``direction=1``), ``step`` away if that
+    works; a huge ``x`` can absorb ``step`` (1e200 + 1 == 1e200), and ``x + step`` can overflow."""
+    with np.errstate(over="ignore", invalid="ignore"):
+        for cand in (x + direction * step, x + direction * max(abs(x), 1.0)):
+            if np.isfinite(cand) and (cand - x) * direction > 0:
+                return float(cand)
+    return float(np.nextafter(x, direction * np.inf))
+
+
 class _SortedRows:
     """Scores sorted once, with the boundaries of groups of equal scores."""
 
@@ -150,9 +170,10 @@ class _SortedRows:
         self.n = n
         u = ss[self.ends]
         m = u.shape[0]
-        gap = (u[-1] - u[0]) / (m - 1) if m > 1 else 1.0
-        lo_ext = u[0] - gap
-        hi_ext = u[-1] + gap
+        with np.errstate(over="ignore"):
+            gap = (u[-1] - u[0]) / (m - 1) if m > 1 else 1.0
+        lo_ext = _beyond(u[0], gap, -1.0)
+        hi_ext = _beyond(u[-1], gap, 1.0)
         if score_bounds is not None:
             if score_bounds[0] < u[0]:
                 lo_ext = score_bounds[0]
@@ -166,7 +187,7 @@ class _SortedRows:
         self.upper = np.empty(m + 1)
         self.upper[:-1] = u
         self.upper[-1] = hi_ext
-        self.mid = 0.5 * (self.lower + self.upper)
+        self.mid = _middle(self.lower, self.upper)
 
     def curve(
         self, d_sorted: np.ndarray, total_flag_all: float, w_sorted: np.ndarray | None
@@ -259,7 +280,7 @@ def _pick_optimum(
     widths = upper[stops] - lower[starts]
     r = int(np.argmax(widths))
     lo, hi = float(lower[starts[r]]), float(upper[stops[r]])
-    value = 0.5 * (lo + hi)
+    value = float(_middle(lo, hi))
     index = int(np.searchsorted(upper, value, side="right"))
     index = min(max(index, int(starts[r])), int(stops[r]))
     return index, value, lo, hi, bool(stops[r] > starts[r])
@@ -278,7 +299,13 @@ def _prepare(scores, y, costs, sample_weight):
     w = None if sample_weight is None else check_sample_weight(sample_weight, n)
     if w is not None and np.all(w == 1.0):
         w = None
-    return s, yi, w, matrix
+    # The rule and the flagged shares do not change when the costs or the weights are scaled;
+    # scaling both by powers of two (exact) keeps the cumulative sums from overflowing for
+    # costs or weights near the largest double. Mean costs are scaled back by `unit`.
+    unit = power_of_two_unit(matrix)
+    if w is not None:
+        w = w / power_of_two_unit(w)
+    return s, yi, w, matrix / unit, unit
 
 
 def search_cutoff(
@@ -331,10 +358,11 @@ def search_cutoff(
     >>> res.cutoff, res.cost, res.interval
     (0.25, 0.25, (0.1, 0.4))
     """
-    s, yi, w, matrix = _prepare(scores, y, costs, sample_weight)
-    return _search_rows(
+    s, yi, w, matrix, unit = _prepare(scores, y, costs, sample_weight)
+    res = _search_rows(
         s, _RowCosts(matrix, yi, w), check_capacity(capacity), _check_bounds(score_bounds)
     )
+    return replace(res, cost=res.cost * unit, costs=res.costs * unit)
 
 
 def _search_rows(s, row_costs: _RowCosts, cap, bounds) -> CutoffSearchResult:
@@ -380,6 +408,8 @@ def capacity_cutoff(
     if cap is None:
         raise ValueError("`capacity` must be a share of rows in (0, 1]; got None.")
     w = None if sample_weight is None else check_sample_weight(sample_weight, s.shape[0])
+    if w is not None:
+        w = w / power_of_two_unit(w)  # shares are scale-free; this keeps their sums finite
     rows = _SortedRows(s, _check_bounds(score_bounds))
     _, flagged, weight = rows.curve(
         np.zeros(s.shape[0]), 0.0, None if w is None else w[rows.order]
@@ -435,7 +465,7 @@ def cutoff_interval(
     >>> bool(ci.low < 0.25 < ci.high)
     True
     """
-    s, yi, w, matrix = _prepare(scores, y, costs, sample_weight)
+    s, yi, w, matrix, _ = _prepare(scores, y, costs, sample_weight)
     cap = check_capacity(capacity)
     bounds = _check_bounds(score_bounds)
     if int(n_resamples) < 1:

@@ -13,12 +13,12 @@ at once, in O(n a^2 + n log n). No grid is involved.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
 
-from .._validation import check_labels, check_same_length, check_sample_weight
+from .._validation import check_labels, check_same_length, check_sample_weight, power_of_two_unit
 from ._bayes import _check_proba_2d
 from ._costs import _resolve_costs
 from ._cutoff import _pick_optimum
@@ -108,13 +108,27 @@ def apply_class_offsets(proba: Any, offsets: Any) -> np.ndarray:
     """
     p = _check_proba_2d(proba)
     b = _check_offsets(offsets, p.shape[1])
+    return _offset_proba(p, b)
+
+
+def _offset_proba(p: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """``p_k exp(b_k)`` normalised per row, without 0 / 0 when every term underflows.
+
+    Rows whose largest term is tiny (``[[1, 0]]`` with offsets ``[0, 800]``: ``exp(-800)``
+    underflows) are recomputed on the log scale, relative to their own largest term; other rows
+    keep the direct product.
+    """
     q = p * np.exp(b - b.max())
+    tiny = q.max(axis=1) < 2.0**-900
+    if tiny.any():
+        with np.errstate(divide="ignore"):
+            log_q = np.log(p[tiny]) + b  # exact zeros stay zero (log 0 = -inf)
+        q[tiny] = np.exp(log_q - log_q.max(axis=1, keepdims=True))
     return q / q.sum(axis=1, keepdims=True)
 
 
 def _adjusted_expected(p: np.ndarray, matrix: np.ndarray, b: np.ndarray) -> np.ndarray:
-    q = p * np.exp(b - b.max())
-    q /= q.sum(axis=1, keepdims=True)
+    q = _offset_proba(p, b)
     if matrix.ndim == 2:
         return q @ matrix
     return np.einsum("nk,nka->na", q, matrix)
@@ -232,7 +246,11 @@ def _prepare(proba, y, costs, sample_weight):
     yi, _ = check_labels(y_arr, name="y", classes=np.arange(p.shape[1]), min_classes=1)
     matrix = _resolve_costs(costs, n, p.shape[1])
     w = check_sample_weight(sample_weight, n)
-    return p, yi, matrix, w
+    # The rule is unchanged when costs or weights are scaled; scaling both by powers of two
+    # (exact) keeps the sums finite for values near the largest double. Costs are reported in
+    # the original units (times `unit`).
+    unit = power_of_two_unit(matrix)
+    return p, yi, matrix / unit, w / power_of_two_unit(w), unit
 
 
 def class_offset_curve(
@@ -273,12 +291,13 @@ def class_offset_curve(
     >>> curve.breakpoints.round(3), curve.costs
     (array([-0.847,  0.405]), array([1. , 0.5, 0. ]))
     """
-    p, yi, matrix, w = _prepare(proba, y, costs, sample_weight)
+    p, yi, matrix, w, unit = _prepare(proba, y, costs, sample_weight)
     b = _check_offsets(offsets, p.shape[1])
     j = int(class_index)
     if not 0 <= j < p.shape[1]:
         raise ValueError(f"`class_index` must be in [0, {p.shape[1]}); got {class_index!r}.")
-    return _sweep(p, yi, matrix, w, b, j)
+    curve = _sweep(p, yi, matrix, w, b, j)
+    return replace(curve, costs=curve.costs * unit)
 
 
 def tune_class_offsets(
@@ -323,7 +342,7 @@ def tune_class_offsets(
     >>> res.initial_cost, res.cost
     (0.5, 0.0)
     """
-    p, yi, matrix, w = _prepare(proba, y, costs, sample_weight)
+    p, yi, matrix, w, unit = _prepare(proba, y, costs, sample_weight)
     if int(max_sweeps) < 1:
         raise ValueError(f"`max_sweeps` must be a positive integer; got {max_sweeps!r}.")
     k = p.shape[1]
@@ -353,5 +372,6 @@ def tune_class_offsets(
             converged = True
             break
     return ClassOffsetResult(
-        offsets=b, cost=cost, initial_cost=initial, n_sweeps=sweeps, converged=converged
+        offsets=b, cost=cost * unit, initial_cost=initial * unit, n_sweeps=sweeps,
+        converged=converged,
     )

@@ -1,0 +1,123 @@
+"""Decision functions at numeric edges: huge costs, huge savings, offsets that underflow.
+
+Most checks rest on a mathematical identity: the least-expected-cost rule is unchanged when the
+whole cost matrix is multiplied by a positive constant (and the mean cost is multiplied by it),
+so a search with costs near the largest double must agree with the same search on small costs.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from probwrap.decision import (
+    apply_class_offsets,
+    budget_actions,
+    capacity_cutoff,
+    cutoff_interval,
+    fit_action_budget,
+    plugin_cutoff,
+    search_cutoff,
+    tune_class_offsets,
+)
+
+
+def _held_out(n=400, seed=0):
+    rng = np.random.default_rng(seed)
+    p = rng.uniform(size=n)
+    y = (rng.uniform(size=n) < p).astype(int)
+    return p, y
+
+
+@pytest.mark.parametrize("unit", [1e308, 2.0**1023, 1e-300, 5e-324])
+def test_cutoff_search_is_invariant_to_scaling_the_costs(unit):
+    p, y = _held_out()
+    small = search_cutoff(p, y, {"fp": 1.0, "fn": 4.0}, score_bounds=(0, 1))
+    # fp : fn = 1 : 4 as for `small`; 5e-324 * 4 is still exact (a multiple of the smallest
+    # denormal), 1e308 / 4 is exact in binary up to rounding of the one entry
+    huge = search_cutoff(p, y, {"fp": unit / 4 if unit > 1 else unit, "fn": unit if unit > 1
+                                else 4 * unit}, score_bounds=(0, 1))
+    assert huge.cutoff == small.cutoff
+    assert huge.interval == small.interval
+    assert np.isfinite(huge.costs).all()
+    scale = unit / 4 if unit > 1 else unit
+    np.testing.assert_allclose(huge.costs, small.costs * scale, rtol=1e-12)
+
+
+def test_huge_cost_gives_the_plug_in_cutoff_on_calibrated_scores():
+    # Elkan (2001): on calibrated probabilities the least-cost cutoff is fp / (fp + fn) = 0.2.
+    # With many rows of calibrated scores the empirical search lands near it; with 1e308 the
+    # old cumulative sums overflowed and the search returned 0.5.
+    p, y = _held_out(n=20_000, seed=3)
+    assert plugin_cutoff({"fp": 2.5e307, "fn": 1e308}) == pytest.approx(0.2)
+    res = search_cutoff(p, y, {"fp": 2.5e307, "fn": 1e308}, score_bounds=(0, 1))
+    assert abs(res.cutoff - 0.2) < 0.05
+
+
+def test_huge_per_row_costs_and_weights():
+    p, y = _held_out(seed=1)
+    rng = np.random.default_rng(5)
+    amounts = rng.uniform(1, 10, size=p.shape[0])
+    row_costs = np.zeros((p.shape[0], 2, 2))
+    row_costs[:, 0, 1] = 1.0
+    row_costs[:, 1, 0] = amounts
+    w = rng.uniform(0.5, 2.0, size=p.shape[0])
+    small = search_cutoff(p, y, row_costs, sample_weight=w, score_bounds=(0, 1))
+    big = search_cutoff(p, y, row_costs * 2.0**1000, sample_weight=w * 2.0**1000,
+                        score_bounds=(0, 1))
+    assert big.cutoff == small.cutoff
+    np.testing.assert_allclose(big.costs, small.costs * 2.0**1000, rtol=1e-12)
+    np.testing.assert_array_equal(big.flagged_share, small.flagged_share)
+
+
+def test_capacity_cutoff_and_interval_with_overflowing_weights():
+    p, y = _held_out(seed=2)
+    w = np.full(p.shape[0], 1e307)
+    assert capacity_cutoff(p, 0.3, sample_weight=w) == capacity_cutoff(p, 0.3)
+    ci = cutoff_interval(p, y, {"fp": 1.0, "fn": 3.0}, sample_weight=w, score_bounds=(0, 1),
+                         n_resamples=20, random_state=0)
+    ref = cutoff_interval(p, y, {"fp": 1.0, "fn": 3.0}, score_bounds=(0, 1), n_resamples=20,
+                          random_state=0)
+    assert (ci.low, ci.high) == (ref.low, ref.high)
+
+
+def test_action_budget_never_exceeds_its_share_with_a_huge_saving():
+    # one row saves 1e200 by taking action 1; with a budget of 20% of 4 rows, no row fits
+    E = np.array([[0.0, 0.1], [1.5, 3.5], [1.5, 2.1], [0.1, -1e200]])
+    budget = fit_action_budget(E, 1, 0.2)
+    taken = budget_actions(E, 1, budget.saving_threshold) == 1
+    assert taken.mean() <= 0.2
+    assert budget.share == taken.mean() == 0.0
+
+
+def test_action_budget_threshold_between_adjacent_savings():
+    # savings 1 and the next double above 1: the midpoint rounds onto 1, which would keep both
+    nxt = np.nextafter(1.0, 2.0)
+    E = np.array([[1.0, 0.0], [nxt, 0.0], [0.0, 1.0], [0.0, 1.0]])
+    budget = fit_action_budget(E, 1, 0.25)
+    taken = budget_actions(E, 1, budget.saving_threshold) == 1
+    assert taken.tolist() == [False, True, False, False]
+    assert budget.share == 0.25
+
+
+def test_class_offsets_that_underflow_keep_the_row_a_distribution():
+    # p * exp(b - max b) underflows to 0 for every class of this row: 0 / 0 before
+    out = apply_class_offsets([[1.0, 0.0]], [0.0, 800.0])
+    np.testing.assert_array_equal(out, [[1.0, 0.0]])  # exact zeros stay zero
+    out = apply_class_offsets([[0.5, 0.5, 0.0], [0.2, 0.3, 0.5]], [0.0, 800.0, 1600.0])
+    assert np.isfinite(out).all()
+    np.testing.assert_array_equal(out, [[0.0, 1.0, 0.0], [0.0, 0.0, 1.0]])
+
+
+def test_tuned_offsets_are_invariant_to_scaling_the_costs():
+    rng = np.random.default_rng(4)
+    p = rng.dirichlet([1.0, 1.0, 1.0], size=300)
+    y = np.array([rng.choice(3, p=row) for row in p])
+    costs = np.array([[0.0, 1.0, 2.0], [3.0, 0.0, 1.0], [5.0, 2.0, 0.0]])
+    small = tune_class_offsets(p, y, costs)
+    big = tune_class_offsets(p, y, costs * 1e307)
+    np.testing.assert_allclose(big.offsets, small.offsets, rtol=1e-12)
+    assert np.isfinite(big.cost) and big.cost == pytest.approx(small.cost * 1e307, rel=1e-12)
+    exact = tune_class_offsets(p, y, costs * 2.0**1020)  # power of two: exact scaling
+    np.testing.assert_array_equal(exact.offsets, small.offsets)
+    assert exact.cost == small.cost * 2.0**1020
