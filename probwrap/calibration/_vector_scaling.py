@@ -17,6 +17,9 @@ __all__ = ["VectorScalingMap", "MatrixScalingMap"]
 #: only keeps the fit finite when the scores separate the classes
 _IDENTITY_PULL = 1e-4
 
+#: outputs are kept within [_OUTPUT_FLOOR, 1 - _OUTPUT_FLOOR]
+_OUTPUT_FLOOR = 1e-15
+
 #: parameters (on standardised scores) beyond this size mean the fit ran off toward infinity
 _RUNAWAY = 30.0
 
@@ -55,6 +58,15 @@ def _smoothed_targets(y: np.ndarray, w: np.ndarray, k: int, smooth: bool) -> np.
     t += (rest / (k - 1))[:, None]
     t[np.arange(n), y] = 1.0 - rest
     return t
+
+
+def _floored_softmax(eta: np.ndarray, binary: bool) -> np.ndarray:
+    """Softmax with every probability kept at or above ``_OUTPUT_FLOOR`` (rows renormalised);
+    for binary scores the positive-class column, kept within [floor, 1 - floor]."""
+    q = np.maximum(np.exp(_log_softmax(eta)), _OUTPUT_FLOOR)
+    if binary:
+        return np.clip(q[:, 1], _OUTPUT_FLOOR, 1.0 - _OUTPUT_FLOOR)
+    return q / q.sum(axis=1, keepdims=True)
 
 
 def _log_softmax(eta: np.ndarray) -> np.ndarray:
@@ -194,8 +206,14 @@ def _fit_linear_softmax(
             f"{np.max(np.abs(theta)):.3g} on standardised scores): the scores separate the "
             "classes and the likelihood has no finite maximum"
         )
+        advice = (
+            "Use shrinkage > 0 or smooth_targets=True for a finite fit."
+            if shrinkage == 0 and not smooth
+            else "The outputs are kept within [1e-15, 1 - 1e-15]; smooth_targets=True bounds "
+            "the fit itself."
+        )
         warnings.warn(
-            f"{name}: {boundary}. Use shrinkage > 0 or smooth_targets=True for a finite fit.",
+            f"{name}: {boundary}. {advice}",
             UserWarning,
             stacklevel=4,
         )
@@ -238,7 +256,8 @@ class VectorScalingMap(CalibrationMap):
     labels ``t_i``. The last term, a very weak pull of the common scale toward the identity map
     (the model's own probabilities), only keeps the fit finite when the scores separate the
     classes perfectly; otherwise the common scale (the temperature) is set by the data alone,
-    as in temperature scaling. The penalty is worth ``shrinkage`` rows, so it matters on small
+    as in temperature scaling. Every output probability is kept within [1e-15, 1 - 1e-15]
+    (rows renormalised), so even far outside the fitted scores no class gets exactly 0 or 1. The penalty is worth ``shrinkage`` rows, so it matters on small
     calibration sets and vanishes on large ones. Weights count as row frequencies: a weight of
     2 gives what a duplicated row gives, and the penalty is measured against the weight total.
 
@@ -295,7 +314,7 @@ class VectorScalingMap(CalibrationMap):
     >>> y = np.argmax(z / [3.0, 1.0, 1.0] + rng.gumbel(size=z.shape), axis=1)
     >>> m = VectorScalingMap().fit(z, y)
     >>> m.scales_.round(2)
-    array([0.32, 0.9 , 1.04])
+    array([0.33, 0.9 , 1.06])
     >>> m.predict(z[:2]).sum(axis=1)
     array([1., 1.])
 
@@ -319,8 +338,8 @@ class VectorScalingMap(CalibrationMap):
         )
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
-        q = np.exp(_log_softmax(_as_columns(scores) * self.scales_ + self.intercepts_))
-        return q[:, 1] if scores.ndim == 1 else q
+        eta = _as_columns(scores) * self.scales_ + self.intercepts_
+        return _floored_softmax(eta, scores.ndim == 1)
 
 
 class MatrixScalingMap(CalibrationMap):
@@ -399,5 +418,5 @@ class MatrixScalingMap(CalibrationMap):
         )
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
-        q = np.exp(_log_softmax(_as_columns(scores) @ self.coef_.T + self.intercepts_))
-        return q[:, 1] if scores.ndim == 1 else q
+        eta = _as_columns(scores) @ self.coef_.T + self.intercepts_
+        return _floored_softmax(eta, scores.ndim == 1)
