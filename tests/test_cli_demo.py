@@ -112,12 +112,14 @@ def _write(tmp_path, name, text):
     [
         ("risk,label\n0.1,0\n0.8,1\n", ["no column 'damaged'", "--label-column"]),
         ("risk,damaged\n0.1,0\nhigh,1\n0.3,0\n", ["column 'risk', row 3", "'high'"]),
-        ("risk,damaged\n0.1,0\n,1\n0.3,1\n", ["column 'risk', row 3", "not a finite number"]),
+        ("risk,damaged\n0.1,0\n,1\n0.3,1\n", ["column 'risk', row 3", "the value is missing"]),
         ("risk,damaged\n0.1,0\n0.2,1\n0.3,nan\n", ["column 'damaged', row 4"]),
         ("", ["the file is empty"]),
         ("risk,damaged\n", ["no rows"]),
-        ("risk,damaged\n0.1,0\n0.2,2\n0.3,1\n", ["column 'damaged', row 3", "not 0 or 1"]),
-        ("risk,damaged\n0.1,0\n0.2,0\n", ["column 'damaged'", "both 0 and 1"]),
+        ("risk,damaged\n0.1,0\n0.2,2\n0.3,1\n", ["column 'damaged'", "exactly two labels",
+                                                 "holds 3: 0, 2, 1"]),
+        ("risk,damaged\n0.1,0\n0.2,0\n", ["column 'damaged'", "exactly two labels",
+                                          "holds 1: 0"]),
         ("risk,damaged\n0.1,0\n1.7,1\n", ["column 'risk', row 3", "not a probability"]),
     ],
 )

@@ -106,7 +106,9 @@ def test_platt_agrees_with_scikit_learn_sigmoid_calibration():
     # GaussianNB has no decision_function, so scikit-learn feeds predict_proba[:, 1] to the
     # sigmoid; give PlattMap the same input
     p1 = clf.predict_proba(Xb[:, :3])[:, 1]
-    m = PlattMap().fit(p1, yb)
+    # probabilities where log-odds belong: PlattMap says so (and still fits, as asked)
+    with pytest.warns(UserWarning, match="look like probabilities"):
+        m = PlattMap().fit(p1, yb)
     np.testing.assert_allclose(m.predict(p1), cal.predict_proba(Xb[:, :3])[:, 1], atol=1e-5)
 
 

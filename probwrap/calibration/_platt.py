@@ -140,6 +140,14 @@ class PlattMap(CalibrationMap):
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         if not isinstance(self.smooth_targets, (bool, np.bool_)):
             raise ValueError(f"`smooth_targets` must be True or False; got {self.smooth_targets!r}.")
+        if scores.shape[0] > 2 and scores.min() >= 0.0 and scores.max() <= 1.0:
+            warnings.warn(
+                "PlattMap: every one of `scores` lies in [0, 1], so they look like probabilities; "
+                "PlattMap takes log-odds (e.g. a decision_function value). Convert probabilities "
+                "first with probwrap.calibration.proba_to_log_odds.",
+                UserWarning,
+                stacklevel=3,
+            )
         if self.smooth_targets:
             n_pos = float(w @ y)
             n_neg = float(w @ (1.0 - y))

@@ -1,17 +1,20 @@
 """The ``probwrap`` command line.
 
 Verbs are registered by the modules of this package; each adds a sub-parser and sets
-``func(args) -> int``. Exit codes: 0 success, 2 usage error (argparse), 1 data error with a
-one-line message naming the file, column or row and the problem.
+``func(args) -> int``. Exit codes: 0 success, 2 usage error (argparse), 1 a problem that stops
+the command (bad data, a file that cannot be written, a missing optional dependency), reported
+in one line that names the file, column or row and the problem. 130 after Ctrl-C, 143 after
+SIGTERM; an interrupted command leaves every output file as it was before.
 """
 
 from __future__ import annotations
 
 import argparse
 import importlib
+import signal
 import sys
 
-from ._common import DataError
+from ._common import OPTIONAL_MODULES, DataError, clean, missing_extra_message
 
 __all__ = ["main", "DataError"]
 
@@ -42,17 +45,46 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class _Terminated(BaseException):
+    """Raised in the main thread on SIGTERM, so that partial outputs are cleaned up."""
+
+
+def _on_sigterm(signum, frame):  # pragma: no cover - exercised in a subprocess test
+    raise _Terminated
+
+
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; returns the exit code."""
     parser = build_parser()
     args = parser.parse_args(argv)
+    previous = None
+    try:
+        previous = signal.signal(signal.SIGTERM, _on_sigterm)
+    except ValueError:  # not in the main thread: leave signals alone
+        previous = None
     try:
         return int(args.func(args) or 0)
     except DataError as exc:
-        print(f"probwrap {args.verb}: error: {exc}", file=sys.stderr)
+        print(f"probwrap {args.verb}: error: {clean(' '.join(str(exc).split()))}",
+              file=sys.stderr)
         return 1
-    except KeyboardInterrupt:  # pragma: no cover
+    except ModuleNotFoundError as exc:
+        root = (exc.name or "").split(".")[0]
+        if root not in OPTIONAL_MODULES:
+            raise
+        print(f"probwrap {args.verb}: error: {missing_extra_message(root)}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        print(f"probwrap {args.verb}: interrupted; files are replaced only when complete, so "
+              "no output was left half-written", file=sys.stderr)
         return 130
+    except _Terminated:
+        print(f"probwrap {args.verb}: terminated; files are replaced only when complete, so "
+              "no output was left half-written", file=sys.stderr)
+        return 143
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -20,11 +20,29 @@ from typing import Any
 import numpy as np
 from sklearn.base import BaseEstimator, ClassifierMixin
 
-from ._common import DataError, numeric_column, progress, read_table
+from ._common import (
+    DataError,
+    Stages,
+    add_positive_label_flag,
+    check_out_suffix,
+    check_ranking,
+    check_row_count,
+    check_writable,
+    clean,
+    numeric_column,
+    probability_column,
+    progress,
+    read_labels,
+    read_table,
+    shown,
+    whole_number,
+    write_table,
+    write_text,
+)
 
 __all__ = [
     "register", "read_labels", "read_scores", "write_table", "add_scale_flag", "whole_number",
-    "report_warnings",
+    "report_warnings", "load_map",
 ]
 
 SCALES = ("proba", "log-odds")
@@ -33,117 +51,32 @@ _CHUNK = 200_000
 
 
 # -- shared readers ------------------------------------------------------------------------------
-def add_scale_flag(parser: argparse.ArgumentParser) -> None:
+def add_scale_flag(parser: argparse.ArgumentParser, *, default: str | None = "proba",
+                   help_extra: str = "") -> None:
     """The ``--scale`` flag: what the score column holds."""
     parser.add_argument(
         "--scale",
         choices=SCALES,
-        default="proba",
+        default=default,
         help="what the score column holds: probabilities of the positive class in [0, 1] "
-        "(default) or log-odds (any real number, e.g. a decision_function value)",
+        + ("(default) " if default == "proba" else "")
+        + "or log-odds (any real number, e.g. a decision_function value)" + help_extra,
     )
 
 
-def read_scores(frame: Any, column: str, path: str | Path, *, scale: str) -> np.ndarray:
+def read_scores(frame: Any, column: str, path: str | Path, *, scale: str,
+                flag: str = "--score-column") -> np.ndarray:
     """The score column as finite floats; probabilities must lie in [0, 1]."""
-    values = numeric_column(frame, column, path, flag="--score-column")
     if scale == "proba":
-        bad = (values < 0.0) | (values > 1.0)
-        if bad.any():
-            row = int(np.flatnonzero(bad)[0])
-            raise DataError(
-                f"{path}: column '{column}', row {row + 2} (counting the header as row 1): "
-                f"{frame[column].iloc[row]!r} is not a probability in [0, 1] (use --scale log-odds for "
-                "log-odds scores)"
-            )
-    return values
-
-
-def read_labels(
-    frame: Any, column: str, path: str | Path, *, positive: str | None = None
-) -> tuple[np.ndarray, list[Any]]:
-    """Binary labels as 0/1 and the two original labels ``[negative, positive]``.
-
-    The positive label is ``positive`` when given (compared as text); otherwise ``1`` or
-    ``True`` when the labels are 0/1 or booleans, else the second label in sorted order.
-    """
-    import pandas as pd
-
-    if column not in frame.columns:
-        raise DataError(
-            f"{path}: no column '{column}' (given by --label-column); the file has columns "
-            f"{', '.join(map(str, frame.columns[:10]))}"
-        )
-    series = frame[column]
-    missing = series.isna().to_numpy()
-    if missing.any():
-        row = int(np.flatnonzero(missing)[0])
-        raise DataError(
-            f"{path}: column '{column}', row {row + 2} (counting the header as row 1): the "
-            "label is missing"
-        )
-    values = series.to_numpy()
-    if series.dtype == object:
-        values = series.astype(str).to_numpy()
-    distinct = pd.unique(values)
-    if distinct.shape[0] != 2:
-        shown = ", ".join(repr(v.item() if hasattr(v, "item") else v) for v in distinct[:6])
-        more = ", ..." if distinct.shape[0] > 6 else ""
-        raise DataError(
-            f"{path}: column '{column}' must hold exactly two labels (binary outcome); it holds "
-            f"{distinct.shape[0]}: {shown}{more}"
-        )
-    labels = sorted(distinct.tolist())
-    if positive is not None:
-        names = [str(v) for v in labels]
-        if positive not in names:
-            raise DataError(
-                f"{path}: column '{column}' has no label {positive!r} (given by "
-                f"--positive-label); its labels are {', '.join(names)}"
-            )
-        pos = labels[names.index(positive)]
-    else:
-        pos = labels[1]  # 1 for 0/1 labels, True for booleans, else the second in sorted order
-    neg = labels[0] if labels[1] == pos else labels[1]
-    y = (values == pos).astype(np.intp)
-    plain = [v.item() if hasattr(v, "item") else v for v in (neg, pos)]
-    return y, plain
-
-
-def write_table(frame: Any, path: str | Path) -> None:
-    """Write a DataFrame as Parquet (``.parquet``/``.pq``) or CSV (any other extension)."""
-    path = Path(path)
-    if path.parent and not path.parent.exists():
-        raise DataError(f"{path}: the folder {path.parent} does not exist")
-    try:
-        if path.suffix.lower() in (".parquet", ".pq"):
-            frame.to_parquet(path, index=False)
-        else:
-            frame.to_csv(path, index=False)
-    except OSError as exc:
-        raise DataError(f"{path}: cannot be written ({exc.strerror or exc})") from None
-
-
-def whole_number(minimum: int):
-    """An argparse type: an integer of at least ``minimum`` (a usage error otherwise)."""
-
-    def parse(text: str) -> int:
-        try:
-            value = int(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-        if value < minimum:
-            raise argparse.ArgumentTypeError(f"must be at least {minimum}; got {value}")
-        return value
-
-    return parse
+        return probability_column(frame, column, path, flag=flag)
+    return numeric_column(frame, column, path, flag=flag)
 
 
 def report_warnings(verb: str, caught: list) -> None:
     """Print each distinct library warning once, on one line of stderr (no source lines)."""
     seen: set[str] = set()
     for w in caught:
-        message = " ".join(str(w.message).split())
+        message = clean(" ".join(str(w.message).split()))
         if message not in seen:
             seen.add(message)
             print(f"probwrap {verb}: warning: {message}", file=sys.stderr)
@@ -186,47 +119,52 @@ def fit_map(
 def _fit(args: argparse.Namespace) -> int:
     from probwrap.calibration import map_to_dict
 
-    frame = read_table(args.scores)
-    scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
-    y, labels = read_labels(frame, args.label_column, args.scores, positive=args.positive_label)
-    counts = np.bincount(y, minlength=2)
-    if args.method == "auto" and counts.min() < 2:
-        raise DataError(
-            f"{args.scores}: column '{args.label_column}' has only {counts.min()} row(s) of one "
-            "label; --method auto needs at least two of each to compare maps by cross-validation"
+    with Stages("calibrate", ["reading", "fitting the map", "writing"]) as stages:
+        stages.start("reading")
+        frame = read_table(args.scores, exact=[args.score_column])
+        scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
+        y, labels = read_labels(
+            frame, args.label_column, args.scores, positive=args.positive_label
         )
-    try:
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always")
-            wrapper = fit_map(
-                to_log_odds(scores, args.scale), y, method=args.method, folds=args.folds,
-                seed=args.seed,
+        check_row_count("calibrate", scores.shape[0], args.scores)
+        check_ranking("calibrate", scores, y, labels, args.scores)
+        counts = np.bincount(y, minlength=2)
+        if args.method == "auto" and counts.min() < 2:
+            raise DataError(
+                f"{args.scores}: column {shown(args.label_column)} has only {counts.min()} "
+                "row(s) of one label; --method auto needs at least two of each to compare maps "
+                "by cross-validation"
             )
-    except ValueError as exc:
-        raise DataError(f"{args.scores}: the map cannot be fitted ({exc})") from None
-    report_warnings("calibrate", caught)
-    metadata: dict[str, Any] = {
-        "score_scale": args.scale,
-        "labels": labels,
-        "n_rows": int(scores.shape[0]),
-        "n_positive": int(counts[1]),
-        "fitted_on": Path(args.scores).name,
-        "score_column": args.score_column,
-    }
-    if args.method == "auto":
-        metadata["auto_log_loss"] = {
-            name: {"log_loss": loss, "standard_error": se}
-            for name, (loss, se) in wrapper.method_scores_.items()
+        stages.start("fitting the map")
+        try:
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
+                wrapper = fit_map(
+                    to_log_odds(scores, args.scale), y, method=args.method, folds=args.folds,
+                    seed=args.seed,
+                )
+        except ValueError as exc:
+            raise DataError(f"{args.scores}: the map cannot be fitted ({exc})") from None
+        report_warnings("calibrate", caught)
+        metadata: dict[str, Any] = {
+            "score_scale": args.scale,
+            "labels": labels,
+            "n_rows": int(scores.shape[0]),
+            "n_positive": int(counts[1]),
+            "fitted_on": Path(args.scores).name,
+            "score_column": args.score_column,
         }
-    description = map_to_dict(wrapper.calibrator_, **metadata)
-    out = Path(args.out)
-    try:
-        out.write_text(json.dumps(description, indent=2, allow_nan=False) + "\n")
-    except OSError as exc:
-        raise DataError(f"{out}: cannot be written ({exc.strerror or exc})") from None
+        if args.method == "auto":
+            metadata["auto_log_loss"] = {
+                name: {"log_loss": loss, "standard_error": se}
+                for name, (loss, se) in wrapper.method_scores_.items()
+            }
+        description = map_to_dict(wrapper.calibrator_, **metadata)
+        stages.start("writing")
+        write_text(args.out, json.dumps(description, indent=2, allow_nan=False) + "\n")
     print(
         f"fitted a {wrapper.method_} map on {scores.shape[0]} rows ({counts[1]} with label "
-        f"{labels[1]!r}) and saved it to {out}"
+        f"{shown(labels[1])}) and saved it to {args.out}"
     )
     if args.method == "auto":
         for name, (loss, se) in sorted(wrapper.method_scores_.items(), key=lambda kv: kv[1][0]):
@@ -235,49 +173,87 @@ def _fit(args: argparse.Namespace) -> int:
     return 0
 
 
-def load_map(path: str | Path) -> tuple[Any, dict[str, Any]]:
-    """A saved map and its description, or a DataError naming the file and the problem."""
-    from probwrap.calibration import map_from_dict
+def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str, Any], str]:
+    """A saved map, its description and the scale of the scores it takes.
+
+    ``scale`` (the ``--scale`` flag of ``apply``) is used when the file does not record the
+    scale (field ``score_scale``; ``metadata.score_scale`` in version 1 files); when both are
+    given they must agree. Any problem is a DataError naming the file.
+    """
+    from probwrap.calibration import map_from_dict, map_score_scale
+    from probwrap.calibration._serialize import MAP_FORMAT
 
     path = Path(path)
     if not path.exists():
         raise DataError(f"{path}: file not found")
+    if path.is_dir():
+        raise DataError(f"{path}: is a folder, not a map file")
     try:
-        description = json.loads(path.read_text())
+        description = json.loads(path.read_text(encoding="utf-8"))
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise DataError(f"{path}: not a JSON file ({exc})") from None
+    except RecursionError:
+        raise DataError(f"{path}: not a probwrap map (JSON nested too deeply)") from None
+    except OSError as exc:
+        raise DataError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    if not isinstance(description, dict):
+        raise DataError(f"{path}: not a probwrap map (the file must hold a JSON object)")
+    if description.get("format") != MAP_FORMAT:
+        raise DataError(
+            f"{path}: not a probwrap map (field 'format' must be {MAP_FORMAT!r}; got "
+            f"{shown(description.get('format'))})"
+        )
+    metadata = description.get("metadata", {})
+    if not isinstance(metadata, dict):
+        raise DataError(f"{path}: not a usable probwrap map: field 'metadata' must be an object")
+    stored = description.get("score_scale", metadata.get("score_scale"))
+    if stored is None and scale is None:
+        raise DataError(
+            f"{path}: the map file does not record the scale of its scores (field "
+            "'score_scale'); say it with --scale proba or --scale log-odds"
+        )
+    if stored in SCALES and scale is not None and stored != scale:
+        raise DataError(
+            f"{path}: the map was fitted on {stored} scores but --scale says {scale}"
+        )
     try:
-        cal_map = map_from_dict(description)
-    except ValueError as exc:
-        raise DataError(f"{path}: not a usable probwrap map: {exc}") from None
+        used = map_score_scale(description, score_scale=scale)
+        cal_map = map_from_dict(description, score_scale=scale)
+    except (ValueError, TypeError, KeyError) as exc:
+        raise DataError(f"{path}: not a usable probwrap map: {clean(str(exc))}") from None
+    except RecursionError:
+        raise DataError(f"{path}: not a probwrap map (nested too deeply)") from None
     if cal_map.n_score_columns_ != 1:
         raise DataError(f"{path}: the map is multiclass; score files here hold one binary score")
-    return cal_map, description
+    return cal_map, dict(description), used
 
 
 def _apply(args: argparse.Namespace) -> int:
-    cal_map, description = load_map(args.map)
-    from probwrap.calibration import map_score_scale
-
-    scale = map_score_scale(description)  # load_map has refused a file without a valid scale
-    frame = read_table(args.scores)
-    scores = read_scores(frame, args.score_column, args.scores, scale=scale)
-    if args.output_column in frame.columns:
-        raise DataError(
-            f"{args.scores}: already has a column '{args.output_column}'; choose another name "
-            "with --output-column"
-        )
-    log_odds = to_log_odds(scores, scale)
-    out = np.empty(log_odds.shape[0])
-    starts = range(0, log_odds.shape[0], _CHUNK)
-    for start in progress(starts, desc="calibrating", total=len(starts)):
-        out[start : start + _CHUNK] = cal_map.predict(log_odds[start : start + _CHUNK])
-    frame = frame.copy()
-    frame[args.output_column] = out
-    write_table(frame, args.out)
+    with Stages("calibrate", ["reading", "calibrating", "writing"]) as stages:
+        stages.start("reading")
+        cal_map, description, scale = load_map(args.map, args.scale)
+        frame = read_table(args.scores, exact=[args.score_column])
+        scores = read_scores(frame, args.score_column, args.scores, scale=scale)
+        if args.output_column in frame.columns:
+            raise DataError(
+                f"{args.scores}: already has a column {shown(args.output_column)}; choose another "
+                "name with --output-column"
+            )
+        stages.start("calibrating")
+        log_odds = to_log_odds(scores, scale)
+        out = np.empty(log_odds.shape[0])
+        starts = range(0, log_odds.shape[0], _CHUNK)
+        for start in progress(starts, desc="calibrating", total=len(starts)):
+            out[start : start + _CHUNK] = cal_map.predict(log_odds[start : start + _CHUNK])
+        if not np.all(np.isfinite(out)):
+            raise DataError(f"{args.map}: the map gives probabilities that are not finite")
+        frame = frame.copy()
+        frame[args.output_column] = out
+        stages.start("writing")
+        write_table(frame, args.out)
     print(
-        f"wrote {frame.shape[0]} rows with column '{args.output_column}' "
-        f"({description['method']} map) to {args.out}"
+        f"wrote {frame.shape[0]} rows with column {shown(args.output_column)} "
+        f"({description['method']} map, {scale} scores) to {args.out}"
     )
     return 0
 
@@ -285,6 +261,8 @@ def _apply(args: argparse.Namespace) -> int:
 def register(subparsers: Any) -> None:
     """Add ``calibrate fit`` and ``calibrate apply``."""
     from probwrap.calibration._serialize import MAP_NAMES
+
+    from ._common import TABLE_SUFFIXES
 
     parser = subparsers.add_parser(
         "calibrate",
@@ -304,11 +282,7 @@ def register(subparsers: Any) -> None:
     fit.add_argument("--scores", required=True, metavar="FILE", help="CSV or Parquet score file")
     fit.add_argument("--score-column", required=True, metavar="C", help="column of scores")
     fit.add_argument("--label-column", required=True, metavar="L", help="column of true labels")
-    fit.add_argument(
-        "--positive-label", metavar="VALUE", default=None,
-        help="which label is the positive class (default: 1/True, else the second in sorted "
-        "order)",
-    )
+    add_positive_label_flag(fit)
     add_scale_flag(fit)
     fit.add_argument(
         "--method", choices=("auto", *MAP_NAMES), default="auto",
@@ -320,21 +294,41 @@ def register(subparsers: Any) -> None:
         help="cross-validation folds used by --method auto (default 5)",
     )
     fit.add_argument("--seed", type=int, default=0, help="seed of the folds (default 0)")
-    fit.add_argument("--out", required=True, metavar="MAP.json", help="where to save the map")
-    fit.set_defaults(func=_fit)
+    fit.add_argument("--out", required=True, metavar="MAP.json",
+                     help="where to save the map (.json)")
+
+    def run_fit(args: argparse.Namespace) -> int:
+        check_out_suffix(fit, args.out, (".json",))
+        check_writable(args.out)
+        return _fit(args)
+
+    fit.set_defaults(func=run_fit)
 
     apply = steps.add_parser(
         "apply",
         help="add calibrated probabilities to a score file",
         description="Apply a saved map: write the score file with an added column of calibrated "
-        "probabilities (CSV or Parquet, by the extension of --out).",
+        "probabilities (CSV or Parquet, by the extension of --out). The output may replace the "
+        "input file: it is written completely before it takes the input's place.",
     )
     apply.add_argument("--map", required=True, metavar="MAP.json", help="map saved by 'fit'")
     apply.add_argument("--scores", required=True, metavar="FILE", help="CSV or Parquet score file")
     apply.add_argument("--score-column", required=True, metavar="C", help="column of scores")
+    add_scale_flag(
+        apply, default=None,
+        help_extra="; needed only when the map file does not record the scale it was fitted on "
+        "(it must agree when it does)",
+    )
     apply.add_argument(
         "--output-column", default="calibrated_probability", metavar="NAME",
         help="name of the added column (default calibrated_probability)",
     )
-    apply.add_argument("--out", required=True, metavar="FILE", help="output CSV or Parquet file")
-    apply.set_defaults(func=_apply)
+    apply.add_argument("--out", required=True, metavar="FILE",
+                       help="output file: .csv, .parquet or .pq")
+
+    def run_apply(args: argparse.Namespace) -> int:
+        check_out_suffix(apply, args.out, TABLE_SUFFIXES)
+        check_writable(args.out)
+        return _apply(args)
+
+    apply.set_defaults(func=run_apply)

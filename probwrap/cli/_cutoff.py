@@ -15,8 +15,19 @@ from typing import Any
 
 import numpy as np
 
-from ._calibrate import add_scale_flag, read_labels, read_scores, report_warnings, whole_number
-from ._common import read_table
+from ._calibrate import add_scale_flag, read_scores, report_warnings
+from ._common import (
+    DataError,
+    Stages,
+    add_format_flag,
+    add_positive_label_flag,
+    add_resamples_flag,
+    check_ranking,
+    check_row_count,
+    read_labels,
+    read_table,
+    shown,
+)
 
 __all__ = ["register", "cutoff_summary"]
 
@@ -70,7 +81,8 @@ def cutoff_summary(
     capacity : float, optional
         Largest share of rows that may be flagged.
     n_resamples, confidence_level, seed
-        Bootstrap settings of :func:`probwrap.decision.cutoff_interval`.
+        Bootstrap settings of :func:`probwrap.decision.cutoff_interval` (``n_resamples=0``:
+        no interval).
 
     Returns
     -------
@@ -90,10 +102,12 @@ def cutoff_summary(
     matrix = binary_cost_matrix(costs)
     bounds = (0.0, 1.0) if scale == "proba" else None
     res = search_cutoff(scores, y, matrix, capacity=capacity, score_bounds=bounds)
-    ci = cutoff_interval(
-        scores, y, matrix, capacity=capacity, score_bounds=bounds, n_resamples=n_resamples,
-        confidence_level=confidence_level, random_state=seed,
-    )
+    ci = None
+    if n_resamples > 0:
+        ci = cutoff_interval(
+            scores, y, matrix, capacity=capacity, score_bounds=bounds, n_resamples=n_resamples,
+            confidence_level=confidence_level, random_state=seed,
+        )
     flagged = float(np.mean(scores > res.cutoff))
     realised = matrix[y, 1]
     out: dict[str, Any] = {
@@ -104,7 +118,7 @@ def cutoff_summary(
         "capacity": capacity,
         "cutoff": float(res.cutoff),
         "cutoff_range": [float(res.interval[0]), float(res.interval[1])],
-        "cutoff_interval": [float(ci.low), float(ci.high)],
+        "cutoff_interval": None if ci is None else [float(ci.low), float(ci.high)],
         "confidence_level": float(confidence_level),
         "n_resamples": int(n_resamples),
         "expected_cost": float(res.cost),
@@ -134,13 +148,15 @@ def _text(out: dict[str, Any], path: str) -> str:
     level = round(100 * out["confidence_level"])
     costs = ", ".join(f"{k}={v:g}" for k, v in out["costs"].items())
     lines = [
-        f"cost-optimal cutoff for {path}: {out['n_rows']} rows, {out['n_positive']} positive",
+        f"cost-optimal cutoff for {path}: {out['n_rows']} rows, {out['n_positive']} positive"
+        + (f" (label {shown(out['labels']['positive'])})" if "labels" in out else ""),
         f"  costs                 {costs}"
         + (f"; capacity {out['capacity']:g} of rows" if out["capacity"] is not None else ""),
         f"  cutoff                {out['cutoff']:.6g}   (act when score > cutoff)",
         f"  same cost for         [{out['cutoff_range'][0]:.6g}, {out['cutoff_range'][1]:.6g})",
         f"  {level}% interval          [{out['cutoff_interval'][0]:.6g}, "
-        f"{out['cutoff_interval'][1]:.6g}]   (bootstrap, {out['n_resamples']} resamples)",
+        f"{out['cutoff_interval'][1]:.6g}]   (bootstrap, {out['n_resamples']} resamples)"
+        if out["cutoff_interval"] is not None else "  interval              not computed (--resamples 0)",
         f"  expected cost per row {out['expected_cost']:.6g}",
         f"  share flagged         {out['flagged_share']:.4g}",
         f"  acting on no row      {out['cost_flag_none']:.6g}",
@@ -163,17 +179,29 @@ def _text(out: dict[str, Any], path: str) -> str:
 
 
 def _run(args: argparse.Namespace) -> int:
-    frame = read_table(args.scores)
-    scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
-    y, _ = read_labels(frame, args.label_column, args.scores, positive=args.positive_label)
-    costs = {"tp": args.cost_tp, "fp": args.cost_fp, "fn": args.cost_fn, "tn": args.cost_tn}
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        out = cutoff_summary(
-            scores, y, costs, scale=args.scale, capacity=args.capacity,
-            n_resamples=args.resamples, confidence_level=args.confidence, seed=args.seed,
+    with Stages("cutoff", ["reading", "searching the cutoff and its interval"]) as stages:
+        stages.start("reading")
+        frame = read_table(args.scores, exact=[args.score_column])
+        scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
+        y, labels = read_labels(
+            frame, args.label_column, args.scores, positive=args.positive_label
         )
+        check_row_count("cutoff", scores.shape[0], args.scores)
+        check_ranking("cutoff", scores, y, labels, args.scores)
+        costs = {"tp": args.cost_tp, "fp": args.cost_fp, "fn": args.cost_fn, "tn": args.cost_tn}
+        stages.start("searching the cutoff and its interval")
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            try:
+                out = cutoff_summary(
+                    scores, y, costs, scale=args.scale, capacity=args.capacity,
+                    n_resamples=args.resamples, confidence_level=args.confidence,
+                    seed=args.seed,
+                )
+            except ValueError as exc:
+                raise DataError(f"{args.scores}: {exc}") from None
     report_warnings("cutoff", caught)
+    out["labels"] = {"negative": labels[0], "positive": labels[1]}
     if args.format == "json":
         print(json.dumps(out, indent=2, allow_nan=False))
     else:
@@ -193,11 +221,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--scores", required=True, metavar="FILE", help="CSV or Parquet file")
     parser.add_argument("--score-column", required=True, metavar="C", help="column of scores")
     parser.add_argument("--label-column", required=True, metavar="L", help="column of labels")
-    parser.add_argument(
-        "--positive-label", metavar="VALUE", default=None,
-        help="which label is the positive class (default: 1/True, else the second in sorted "
-        "order)",
-    )
+    add_positive_label_flag(parser)
     add_scale_flag(parser)
     for key, what in (
         ("fp", "acting on a negative row (e.g. an inspection that finds nothing)"),
@@ -213,14 +237,11 @@ def register(subparsers: Any) -> None:
         "--capacity", type=_share, default=None, metavar="SHARE",
         help="largest share of rows that may be acted on, e.g. 0.1",
     )
-    parser.add_argument(
-        "--resamples", type=whole_number(1), default=200, metavar="N",
-        help="bootstrap resamples for the interval (default 200)",
-    )
+    add_resamples_flag(parser)
     parser.add_argument(
         "--confidence", type=_level, default=0.95, metavar="LEVEL",
         help="coverage of the interval (default 0.95)",
     )
     parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
-    parser.add_argument("--format", choices=("text", "json"), default="text")
+    add_format_flag(parser)
     parser.set_defaults(func=_run)

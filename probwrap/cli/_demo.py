@@ -8,6 +8,8 @@ from pathlib import Path
 
 import numpy as np
 
+from ._common import DataError, Stages, check_writable, require, whole_number, write_text
+
 __all__ = ["register", "run_demo", "run_three_way_demo", "parcel_costs"]
 
 #: the scenario's costs (currency units): inspection and repacking ~3, a damaged delivery ~40
@@ -28,9 +30,11 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         "print a summary and write DIR/report.html.",
     )
     parser.add_argument("--out", required=True, metavar="DIR", help="directory for report.html")
-    parser.add_argument("--n-train", type=int, default=4000, metavar="N",
-                        help="summer parcels for training (default 4000)")
-    parser.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
+    parser.add_argument("--n-train", type=whole_number(500), default=4000, metavar="N",
+                        help="summer parcels for training (default 4000, at least 500)")
+    parser.add_argument("--seed", type=int, default=0,
+                        help="random seed of the data, the folds and the bootstraps (default 0); "
+                        "the same seed gives the same numbers and report")
     parser.add_argument(
         "--variant", choices=("damage", "three-way"), default="damage",
         help="damage (default): inspect or ship; three-way: intact / dented / broken parcels "
@@ -40,54 +44,92 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.set_defaults(func=_handler)
 
 
-def run_demo(out: str | Path, *, n_train: int = 4000, seed: int = 0) -> dict:
-    """Run the demo and write ``out/report.html``; returns the summary numbers."""
+def _write_page(out: Path, page: str) -> Path:
+    if out.exists() and not out.is_dir():
+        raise DataError(f"{out}: is a file; --out names a folder for report.html")
+    target = out / "report.html"
+    write_text(target, page)
+    return target
+
+
+def run_demo(
+    out: str | Path, *, n_train: int = 4000, seed: int = 0, stages: Stages | None = None
+) -> dict:
+    """Run the demo and write ``out/report.html``; returns the summary numbers.
+
+    Every random step (data, folds, bootstraps) is seeded from ``seed``: the same seed gives
+    the same numbers.
+    """
     from sklearn.linear_model import LogisticRegression
     from sklearn.pipeline import make_pipeline
     from sklearn.preprocessing import StandardScaler
 
     from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
     from probwrap.datasets import make_parcels
-    from probwrap.report import write_report
-
-    from ._common import progress
+    from probwrap.report import build_report
 
     if n_train < 500:
         raise ValueError("`--n-train` must be at least 500 (damage is rare).")
-    steps = iter(progress(range(5), desc="demo", total=5))
+    step = (stages or _NoStages()).start
+    step("making the invented parcels")
     summer = make_parcels(n_train, random_state=seed)
     test = make_parcels(max(n_train // 2, 1000), random_state=seed + 1)
     winter = make_parcels(max(n_train // 2, 1000), season="winter", random_state=seed + 2)
     base = make_pipeline(StandardScaler(), LogisticRegression(max_iter=1000))
 
-    next(steps, None)
-    calibrated = CalibrationWrapper(base, method="platt", cv=3)
+    step("calibrating and tuning the cutoff")
+    calibrated = CalibrationWrapper(base, method="platt", cv=3, random_state=seed)
     policy = CostPolicyWrapper(
         calibrated, costs=DEMO_COSTS, strategy="tuned", capacity=DEMO_CAPACITY,
         actions=["ship", "inspect"], cv=3, random_state=seed, n_resamples=100,
     ).fit(summer.data, summer.target)
-    next(steps, None)
+    step("estimating the winter prevalence")
     shift = PriorShiftWrapper(
-        CalibrationWrapper(base, method="platt", cv=3), cv=3, n_resamples=100,
-        random_state=seed,
+        CalibrationWrapper(base, method="platt", cv=3, random_state=seed), cv=3,
+        n_resamples=100, random_state=seed,
     ).fit(summer.data, summer.target)
     shift.adapt(winter.data)
-    next(steps, None)
-    out = Path(out)
-    content = write_report(
-        out / "report.html", model=policy, X=test.data, y=test.target,
+    step("computing the report")
+    content, page = build_report(
+        **_report_progress(stages),
+        model=policy, X=test.data, y=test.target,
         X_unlabelled=winter.data, prior_shift=shift, batch_size=max(len(winter.target) // 5, 1),
         n_resamples=100, random_state=seed,
         title="Parcel damage: inspect or ship (invented demo data)",
     )
-    next(steps, None)
+    step("writing the report")
+    target = _write_page(Path(out), page)
     rules = {r.key: r for r in content.rules}
     return {
         "content": content,
         "true_winter_prevalence": float(np.mean(winter.target)),
         "rules": rules,
-        "report": out / "report.html",
+        "report": target,
     }
+
+
+def _report_progress(stages: Stages | None) -> dict:
+    """``progress=stages.detail`` where the report accepts a progress callback."""
+    from ._report_verb import _collect_parameters
+
+    if stages is None or "progress" not in _collect_parameters():
+        return {}
+    return {"progress": stages.detail}
+
+
+class _NoStages:
+    def start(self, name: str) -> None:
+        pass
+
+
+#: the named steps of each demo variant (what the progress display counts)
+DEMO_STEPS = {
+    "damage": ["making the invented parcels", "calibrating and tuning the cutoff",
+               "estimating the winter prevalence", "computing the report", "writing the report"],
+    "three-way": ["making the invented parcels", "tuning the routing policy",
+                  "estimating the winter class shares", "computing the report",
+                  "writing the report"],
+}
 
 
 def parcel_costs(X) -> np.ndarray:
@@ -117,7 +159,9 @@ def _three_way_frame(n: int, seed: int, season: str = "summer"):
     return X, np.asarray(bunch.target), bunch
 
 
-def run_three_way_demo(out: str | Path, *, n_train: int = 4000, seed: int = 0) -> dict:
+def run_three_way_demo(
+    out: str | Path, *, n_train: int = 4000, seed: int = 0, stages: Stages | None = None
+) -> dict:
     """Ship / repack / hold with per-parcel costs; writes ``out/report.html``, returns numbers."""
     from sklearn.compose import ColumnTransformer
     from sklearn.linear_model import LogisticRegression
@@ -125,13 +169,13 @@ def run_three_way_demo(out: str | Path, *, n_train: int = 4000, seed: int = 0) -
     from sklearn.preprocessing import StandardScaler
 
     from probwrap import CostPolicyWrapper, PriorShiftWrapper
-    from probwrap.report import write_report
-
-    from ._common import progress
+    from probwrap.report import build_report
 
     if n_train < 500:
         raise ValueError("`--n-train` must be at least 500 (damage is rare).")
-    steps = iter(progress(range(4), desc="demo", total=4))
+    require("pandas")
+    step = (stages or _NoStages()).start
+    step("making the invented parcels")
     X, y, summer = _three_way_frame(n_train, seed)
     Xt, yt, _ = _three_way_frame(max(n_train // 2, 1000), seed + 1)
     Xw, yw, _ = _three_way_frame(max(n_train // 2, 1000), seed + 2, season="winter")
@@ -139,33 +183,37 @@ def run_three_way_demo(out: str | Path, *, n_train: int = 4000, seed: int = 0) -
     # the model never sees the value column; the costs do
     base = make_pipeline(ColumnTransformer([("features", StandardScaler(), features)]),
                          LogisticRegression(max_iter=1000))
-    next(steps, None)
+    step("tuning the routing policy")
     policy = CostPolicyWrapper(
         base, costs=parcel_costs, actions=list(THREE_WAY_ACTIONS),
         capacity={"hold": THREE_WAY_HOLD_CAPACITY}, cv=3, random_state=seed,
     ).fit(X, y)
-    next(steps, None)
+    step("estimating the winter class shares")
     shift = PriorShiftWrapper(base, cv=3, n_resamples=100, random_state=seed).fit(X, y)
     shift.adapt(Xw)
-    next(steps, None)
-    out = Path(out)
-    content = write_report(
-        out / "report.html", model=policy, X=Xt, y=yt, X_unlabelled=Xw, prior_shift=shift,
+    step("computing the report")
+    content, page = build_report(
+        **_report_progress(stages),
+        model=policy, X=Xt, y=yt, X_unlabelled=Xw, prior_shift=shift,
         class_names=summer.target_names, n_resamples=100, random_state=seed,
         title="Parcels: ship, repack or hold (invented demo data)",
     )
-    next(steps, None)
+    step("writing the report")
+    target = _write_page(Path(out), page)
     return {
         "content": content,
         "true_winter_shares": np.bincount(yw, minlength=3) / yw.shape[0],
         "rules": {r.key: r for r in content.rules},
-        "report": out / "report.html",
+        "report": target,
     }
 
 
 def _three_way_handler(args: argparse.Namespace) -> int:
     start = time.perf_counter()
-    result = run_three_way_demo(args.out, n_train=args.n_train, seed=args.seed)
+    check_writable(args.out, folder=True)
+    with Stages("demo", DEMO_STEPS["three-way"]) as stages:
+        result = run_three_way_demo(args.out, n_train=args.n_train, seed=args.seed,
+                                    stages=stages)
     c = result["content"]
     print("probwrap demo (three-way): ship / repack (4) / hold (12), costs from each parcel's "
           f"value, hold capacity {THREE_WAY_HOLD_CAPACITY:.0%}")
@@ -195,7 +243,9 @@ def _handler(args: argparse.Namespace) -> int:
     if getattr(args, "variant", "damage") == "three-way":
         return _three_way_handler(args)
     start = time.perf_counter()
-    result = run_demo(args.out, n_train=args.n_train, seed=args.seed)
+    check_writable(args.out, folder=True)
+    with Stages("demo", DEMO_STEPS["damage"]) as stages:
+        result = run_demo(args.out, n_train=args.n_train, seed=args.seed, stages=stages)
     c = result["content"]
     rules = result["rules"]
     print("probwrap demo: parcel damage, inspect (3) vs damaged delivery (40), "

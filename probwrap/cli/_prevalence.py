@@ -23,8 +23,19 @@ from typing import Any
 
 import numpy as np
 
-from ._calibrate import add_scale_flag, read_labels, read_scores, report_warnings, whole_number
-from ._common import read_table
+from ._calibrate import add_scale_flag, read_scores, report_warnings
+from ._common import (
+    DataError,
+    Stages,
+    add_format_flag,
+    add_positive_label_flag,
+    add_resamples_flag,
+    check_ranking,
+    check_row_count,
+    progress,
+    read_labels,
+    read_table,
+)
 from ._cutoff import _level
 
 __all__ = ["register", "prevalence_from_source", "prevalence_from_reference"]
@@ -75,6 +86,11 @@ def prevalence_from_source(
     src = np.array([1.0 - source_prevalence, source_prevalence])
     point = em_prior(p2, src)
     test = shift_test(p2, src)
+    if not (np.all(np.isfinite(point.prior)) and np.isfinite(test.statistic)):
+        raise ValueError(
+            f"with source prevalence {source_prevalence:g} the estimate is not a finite number; "
+            "give a source prevalence the scores were really calibrated for"
+        )
     out = _result(point.prior[1], point.converged, "em", proba.shape[0], source_prevalence, test)
     if n_resamples > 0:
         rng = check_random_state(seed)
@@ -83,7 +99,7 @@ def prevalence_from_source(
         init = point.prior if np.all(point.prior > 0) else None
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            for b in range(n_resamples):
+            for b in progress(range(n_resamples), desc="bootstrap", total=n_resamples):
                 counts = np.bincount(rng.randint(0, n, size=n), minlength=n).astype(float)
                 draws[b] = em_prior(p2, src, sample_weight=counts, init=init).prior[1]
         alpha = 1.0 - confidence_level
@@ -175,33 +191,57 @@ def _text(out: dict[str, Any], path: str, level: float) -> str:
 
 
 def _run(args: argparse.Namespace) -> int:
-    frame = read_table(args.unlabelled)
-    proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale)
-    if args.scale == "log-odds":
-        from probwrap.calibration import log_odds_to_proba
+    names = ["reading", "estimating the prevalence" + (" and its interval" if args.resamples else "")]
+    with Stages("prevalence", names) as stages:
+        stages.start("reading")
+        frame = read_table(args.unlabelled, exact=[args.score_column])
+        proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale)
+        if args.scale == "log-odds":
+            from probwrap.calibration import log_odds_to_proba
 
-        proba = log_odds_to_proba(proba)
-    settings = {
-        "n_resamples": args.resamples, "confidence_level": args.confidence, "seed": args.seed,
-    }
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        if args.reference is None:
-            out = prevalence_from_source(proba, args.source_prevalence, **settings)
-        else:
-            ref = read_table(args.reference)
+            proba = log_odds_to_proba(proba)
+        settings = {
+            "n_resamples": args.resamples, "confidence_level": args.confidence, "seed": args.seed,
+        }
+        if args.reference is not None:
             ref_column = args.reference_score_column or args.score_column
-            ref_scores = read_scores(ref, ref_column, args.reference, scale=args.scale)
+            ref = read_table(args.reference, exact=[ref_column])
+            ref_scores = read_scores(
+                ref, ref_column, args.reference, scale=args.scale,
+                flag="--reference-score-column" if args.reference_score_column
+                else "--score-column",
+            )
             if args.scale == "log-odds":
                 ref_scores = log_odds_to_proba(ref_scores)
-            ref_y, _ = read_labels(
+            ref_y, labels = read_labels(
                 ref, args.label_column, args.reference, positive=args.positive_label
             )
-            out = prevalence_from_reference(
-                proba, ref_scores, ref_y, method=args.method,
-                recalibrate=not args.no_recalibration, **settings,
-            )
+        check_row_count("prevalence", proba.shape[0], args.unlabelled, "unlabelled rows")
+        if args.reference is not None:
+            check_row_count("prevalence", ref_scores.shape[0], args.reference, "reference rows")
+            check_ranking("prevalence", ref_scores, ref_y, labels, args.reference)
+        stages.start(names[1])
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            try:
+                if args.reference is None:
+                    out = prevalence_from_source(proba, args.source_prevalence, **settings)
+                else:
+                    out = prevalence_from_reference(
+                        proba, ref_scores, ref_y, method=args.method,
+                        recalibrate=not args.no_recalibration, **settings,
+                    )
+                    out["labels"] = {"negative": labels[0], "positive": labels[1]}
+            except (ValueError, FloatingPointError, ZeroDivisionError) as exc:
+                raise DataError(
+                    f"{args.unlabelled}: the prevalence cannot be estimated ({exc})"
+                ) from None
     report_warnings("prevalence", caught)
+    if not all(np.isfinite(v) for v in (out["prevalence"], out["shift_statistic"])):
+        raise DataError(
+            f"{args.unlabelled}: the prevalence cannot be estimated (the computation did not "
+            "give a finite answer; check --source-prevalence and the scores)"
+        )
     if args.format == "json":
         print(json.dumps(out, indent=2, allow_nan=False))
     else:
@@ -238,11 +278,7 @@ def register(subparsers: Any) -> None:
         "--reference-score-column", metavar="C", default=None,
         help="score column of the reference file (default: the --score-column name)",
     )
-    parser.add_argument(
-        "--positive-label", metavar="VALUE", default=None,
-        help="which reference label is the positive class (default: 1/True, else the second "
-        "in sorted order)",
-    )
+    add_positive_label_flag(parser, "reference label")
     parser.add_argument(
         "--method", choices=("em", "bbse", "acc", "pacc"), default="em",
         help="maximum likelihood (em, default), black-box shift estimation (bbse), adjusted "
@@ -253,23 +289,23 @@ def register(subparsers: Any) -> None:
         help="with --reference: use the scores as they are instead of recalibrating them on "
         "the reference rows (bias-corrected temperature scaling)",
     )
-    parser.add_argument(
-        "--resamples", type=whole_number(0), default=200, metavar="N",
-        help="bootstrap resamples for the interval (default 200; 0 skips the interval)",
-    )
+    add_resamples_flag(parser)
     parser.add_argument(
         "--confidence", type=_level, default=0.95, metavar="LEVEL",
         help="coverage of the interval (default 0.95)",
     )
     parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
-    parser.add_argument("--format", choices=("text", "json"), default="text")
+    add_format_flag(parser)
 
     def run(args: argparse.Namespace) -> int:
         if args.reference is None:
             if args.method != "em":
                 parser.error(f"--method {args.method} needs --reference (a labelled file)")
-            if args.label_column is not None or args.no_recalibration:
-                parser.error("--label-column and --no-recalibration go with --reference")
+            if (args.label_column is not None or args.no_recalibration
+                    or args.positive_label is not None):
+                parser.error(
+                    "--label-column, --positive-label and --no-recalibration go with --reference"
+                )
         elif args.label_column is None:
             parser.error("--reference needs --label-column")
         return _run(args)

@@ -3,12 +3,57 @@
 from __future__ import annotations
 
 import argparse
+import json
+import math
+import warnings
 
 import numpy as np
 
-from ._common import DataError, numeric_column, read_table
+from ._calibrate import add_scale_flag, read_scores, report_warnings
+from ._common import (
+    MIN_RESAMPLES,
+    DataError,
+    Stages,
+    add_format_flag,
+    add_positive_label_flag,
+    add_resamples_flag,
+    check_out_suffix,
+    check_ranking,
+    check_row_count,
+    check_writable,
+    clean,
+    numeric_column,
+    probability_column,
+    read_labels,
+    read_table,
+    require,
+    shown,
+    whole_number,
+    write_text,
+)
 
 __all__ = ["register"]
+
+#: the most reliability bins the report draws (common practice: 10-20; more leave bins empty)
+MAX_BINS = 1000
+REPORT_SUFFIXES = (".html", ".htm")
+
+
+def _finite(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"must be a finite number; got {text}")
+    return value
+
+
+def _bins(text: str) -> int:
+    value = whole_number(1)(text)
+    if value > MAX_BINS:
+        raise argparse.ArgumentTypeError(f"must be at most {MAX_BINS}; got {value}")
+    return value
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -28,8 +73,10 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         help="instead of --score-column: one probability column per class, "
                         "comma-separated; labels are these column names or indices 0..k-1")
     parser.add_argument("--label-column", required=True, metavar="L",
-                        help="column of labels coded 0 / 1 (or, with --class-columns, the "
-                        "class of each row)")
+                        help="column of labels: two values (0/1, or any two with "
+                        "--positive-label), or with --class-columns the class of each row")
+    add_positive_label_flag(parser)
+    add_scale_flag(parser, help_extra=" (binary files; --class-columns take probabilities)")
     parser.add_argument("--cost-matrix", metavar="ROWS",
                         help="with --class-columns: costs, one row per class (in column order) "
                         "separated by ';', one entry per action separated by ',', e.g. "
@@ -46,49 +93,25 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                                ("fn", None, "not acting on a positive"),
                                ("tp", 0.0, "acting on a positive"),
                                ("tn", 0.0, "not acting on a negative")):
-        parser.add_argument(f"--cost-{key}", type=float, default=default, metavar="X",
+        parser.add_argument(f"--cost-{key}", type=_finite, default=default, metavar="X",
                             help=f"cost of {what}" + ("" if default is None else " (default 0)"))
-    parser.add_argument("--capacity", type=float, metavar="SHARE",
+    parser.add_argument("--capacity", type=_finite, metavar="SHARE",
                         help="largest share of rows that may be acted on, in (0, 1]")
-    parser.add_argument("--batch-size", type=int, metavar="N",
+    parser.add_argument("--batch-size", type=whole_number(1), metavar="N",
                         help="also estimate the prevalence per batch of N unlabelled rows")
-    parser.add_argument("--bins", type=int, default=10, metavar="K",
-                        help="reliability bins (default 10)")
-    parser.add_argument("--resamples", type=int, default=200, metavar="B",
-                        help="bootstrap resamples for intervals (default 200)")
+    parser.add_argument("--bins", type=_bins, default=10, metavar="K",
+                        help=f"reliability bins (default 10, at most {MAX_BINS})")
+    add_resamples_flag(parser, allow_zero=False)
     parser.add_argument("--seed", type=int, default=0, help="bootstrap seed (default 0)")
     parser.add_argument("--title", default="probwrap report", help="report title")
-    parser.add_argument("--out", required=True, metavar="FILE", help="HTML file to write")
+    parser.add_argument("--out", required=True, metavar="FILE",
+                        help="HTML file to write (.html or .htm)")
+    add_format_flag(parser)
     parser.set_defaults(func=_handler, _parser=parser)
 
 
 def _probabilities(frame, column: str, path: str, flag: str) -> np.ndarray:
-    values = numeric_column(frame, column, path, flag=flag)
-    bad = (values < 0) | (values > 1)
-    if bad.any():
-        row = int(np.flatnonzero(bad)[0])
-        raise DataError(
-            f"{path}: column '{column}', row {row + 2} (counting the header as row 1): "
-            f"{values[row]!r} is not a probability in [0, 1]"
-        )
-    return values
-
-
-def _labels(frame, column: str, path: str) -> np.ndarray:
-    values = numeric_column(frame, column, path, flag="--label-column")
-    bad = (values != 0) & (values != 1)
-    if bad.any():
-        row = int(np.flatnonzero(bad)[0])
-        raise DataError(
-            f"{path}: column '{column}', row {row + 2} (counting the header as row 1): "
-            f"label {frame[column].iloc[row]!r} is not 0 or 1 (labels must be binary)"
-        )
-    if np.unique(values).shape[0] < 2:
-        raise DataError(
-            f"{path}: column '{column}' holds only the label {int(values[0])}; both 0 and 1 are "
-            "needed"
-        )
-    return values.astype(np.intp)
+    return probability_column(frame, column, path, flag=flag)
 
 
 def _split(text: str) -> list[str]:
@@ -116,6 +139,14 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         parser.error("with --class-columns give costs as --cost-matrix, not --cost-fp/--cost-fn")
     if args.batch_size is not None:
         parser.error("--batch-size is available for binary score files only")
+    if args.positive_label is not None:
+        parser.error("--positive-label is for binary score files (--score-column); with "
+                     "--class-columns the labels name the classes")
+    if args.scale != "proba":
+        parser.error("--class-columns take probabilities; --scale log-odds is for binary files")
+    if args.capacity is not None and not 0 < args.capacity <= 1:
+        parser.error(f"--capacity must be a share in (0, 1]; got {args.capacity:g}")
+    check_writable(args.out)
     matrix = None if args.cost_matrix is None else _cost_matrix(args.cost_matrix, parser)
     if matrix is not None and matrix.shape[0] != len(columns):
         parser.error(f"--cost-matrix has {matrix.shape[0]} rows but --class-columns names "
@@ -145,62 +176,113 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
                             f"probabilities sum to {sums[row]!r}, not 1")
         return P
 
-    frame = read_table(args.scores)
-    P = probabilities(args.scores, frame)
+    with Stages("report", ["reading", "computing the report", "writing"]) as stages:
+        stages.start("reading")
+        frame = read_table(args.scores, exact=columns)
+        P = probabilities(args.scores, frame)
+        y = _class_labels(frame, args, columns)
+        q = None
+        if args.unlabelled is not None:
+            q = probabilities(args.unlabelled, read_table(args.unlabelled, exact=columns))
+        check_row_count("report", P.shape[0], args.scores, "labelled rows")
+        if q is not None:
+            check_row_count("report", q.shape[0], args.unlabelled, "unlabelled rows")
+        content = _build_and_write(
+            args, stages, y_true=y, y_prob=P, costs=matrix, capacity=capacity,
+            action_names=actions, unlabelled_prob=q, class_names=columns,
+        )
+    summary = {"out": args.out, "n_rows": int(content.n_rows),
+               "n_classes": int(content.n_classes)}
+    line = f"wrote {args.out}: {content.n_rows} labelled rows, {content.n_classes} classes"
+    if content.rules:
+        summary["mean_cost_rule_in_use"] = float(content.rules[0].mean_cost)
+        line += f", mean cost of the rule in use {content.rules[0].mean_cost:.4f}"
+    if content.shift_pvalue is not None:
+        summary["shift_pvalue"] = float(content.shift_pvalue)
+        line += f", shift p = {content.shift_pvalue:.3g}"
+    _print_summary(args, line, summary)
+    return 0
+
+
+def _class_labels(frame, args: argparse.Namespace, columns: list[str]) -> np.ndarray:
+    pd = require("pandas")
     if args.label_column not in frame.columns:
-        raise DataError(f"{args.scores}: no column '{args.label_column}' (given by "
+        raise DataError(f"{args.scores}: no column {shown(args.label_column)} (given by "
                         f"--label-column)")
     raw = frame[args.label_column]
-    as_text = raw.astype(str).to_numpy()
-    import pandas as pd
-
+    missing = raw.isna().to_numpy()
+    if missing.any():
+        row = int(np.flatnonzero(missing)[0])
+        raise DataError(f"{args.scores}: column {shown(args.label_column)}, row {row + 2} "
+                        "(counting the header as row 1): the label is missing")
+    as_text = raw.astype(str).to_numpy(dtype=object)
     numeric = pd.to_numeric(raw, errors="coerce").notna().to_numpy()
     named = np.isin(as_text, columns)
     if named.any() or not numeric.all():
         if not named.all():
             row = int(np.flatnonzero(~named)[0])
             raise DataError(
-                f"{args.scores}: column '{args.label_column}', row {row + 2} (counting the "
-                f"header as row 1): label {raw.iloc[row]!r} is not one of the class columns "
+                f"{args.scores}: column {shown(args.label_column)}, row {row + 2} (counting the "
+                f"header as row 1): label {shown(raw.iloc[row])} is not one of the class columns "
                 f"{', '.join(columns)}"
             )
-        y = np.array([columns.index(v) for v in as_text], dtype=np.intp)
-    else:
-        y = numeric_column(frame, args.label_column, args.scores, flag="--label-column")
-        bad = (y != np.round(y)) | (y < 0) | (y >= len(columns))
-        if bad.any():
-            row = int(np.flatnonzero(bad)[0])
-            raise DataError(
-                f"{args.scores}: column '{args.label_column}', row {row + 2} (counting the "
-                f"header as row 1): label {raw.iloc[row]!r} is neither a class column name nor "
-                f"an index 0..{len(columns) - 1}"
-            )
-        y = y.astype(np.intp)
-    q = None
-    if args.unlabelled is not None:
-        q = probabilities(args.unlabelled, read_table(args.unlabelled))
-    from probwrap.report import write_report
-
-    try:
-        content = write_report(
-            args.out, y_true=y, y_prob=P, costs=matrix, capacity=capacity,
-            action_names=actions, unlabelled_prob=q, n_bins=args.bins,
-            n_resamples=args.resamples, random_state=args.seed, title=args.title,
-            class_names=columns,
+        return np.array([columns.index(v) for v in as_text], dtype=np.intp)
+    y = numeric_column(frame, args.label_column, args.scores, flag="--label-column")
+    bad = (y != np.round(y)) | (y < 0) | (y >= len(columns))
+    if bad.any():
+        row = int(np.flatnonzero(bad)[0])
+        raise DataError(
+            f"{args.scores}: column {shown(args.label_column)}, row {row + 2} (counting the "
+            f"header as row 1): label {shown(raw.iloc[row])} is neither a class column name nor "
+            f"an index 0..{len(columns) - 1}"
         )
-    except ValueError as exc:
-        raise DataError(f"{args.scores}: {exc}") from None
-    line = f"wrote {args.out}: {content.n_rows} labelled rows, {content.n_classes} classes"
-    if content.rules:
-        line += f", mean cost of the rule in use {content.rules[0].mean_cost:.4f}"
-    if content.shift_pvalue is not None:
-        line += f", shift p = {content.shift_pvalue:.3g}"
-    print(line)
-    return 0
+    return y.astype(np.intp)
+
+
+def _build_and_write(args: argparse.Namespace, stages: Stages, **inputs):
+    """Compute the report, then write it atomically; library errors become DataErrors."""
+    from probwrap.report import build_report
+
+    stages.start("computing the report")
+    if "progress" in _collect_parameters():
+        inputs["progress"] = stages.detail
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            content, page = build_report(
+                n_bins=args.bins, n_resamples=args.resamples, random_state=args.seed,
+                title=args.title, **inputs,
+            )
+        except (ValueError, FloatingPointError, OverflowError) as exc:
+            raise DataError(f"{args.scores}: the report cannot be made ({clean(str(exc))})"
+                            ) from None
+    report_warnings("report", caught)
+    stages.start("writing")
+    write_text(args.out, page)
+    return content
+
+
+def _collect_parameters() -> set[str]:
+    """Keyword arguments the report accepts (a progress callback where available)."""
+    import inspect
+
+    from probwrap.report._content import collect_content  # what build_report calls
+
+    return set(inspect.signature(collect_content).parameters)
+
+
+def _print_summary(args: argparse.Namespace, line: str, summary: dict) -> None:
+    if args.format == "json":
+        print(json.dumps(summary, indent=2, allow_nan=False))
+    else:
+        print(line)
 
 
 def _handler(args: argparse.Namespace) -> int:
     parser: argparse.ArgumentParser = args._parser
+    check_out_suffix(parser, args.out, REPORT_SUFFIXES)
+    if args.resamples < MIN_RESAMPLES:  # pragma: no cover - the flag's type refuses it
+        parser.error(f"--resamples must be at least {MIN_RESAMPLES}")
     if (args.score_column is None) == (args.class_columns is None):
         parser.error("give either --score-column (binary) or --class-columns (one per class)")
     if args.class_columns is not None:
@@ -211,24 +293,13 @@ def _handler(args: argparse.Namespace) -> int:
     if len(given) == 1:
         parser.error("give both --cost-fp and --cost-fn, or neither")
     if args.capacity is not None and not 0 < args.capacity <= 1:
-        parser.error(f"--capacity must be a share in (0, 1]; got {args.capacity}")
+        parser.error(f"--capacity must be a share in (0, 1]; got {args.capacity:g}")
     if args.capacity is not None and not given:
         parser.error("--capacity needs costs (--cost-fp and --cost-fn)")
-    if args.batch_size is not None and (args.batch_size < 1 or args.unlabelled is None):
-        parser.error("--batch-size needs --unlabelled and a positive N")
-    if args.bins < 1 or args.resamples < 2:
-        parser.error("--bins must be >= 1 and --resamples >= 2")
+    if args.batch_size is not None and args.unlabelled is None:
+        parser.error("--batch-size needs --unlabelled")
 
-    frame = read_table(args.scores)
-    p = _probabilities(frame, args.score_column, args.scores, "--score-column")
-    y = _labels(frame, args.label_column, args.scores)
-    q = None
-    if args.unlabelled is not None:
-        uframe = read_table(args.unlabelled)
-        column = args.unlabelled_score_column or args.score_column
-        q = _probabilities(uframe, column, args.unlabelled,
-                           "--unlabelled-score-column" if args.unlabelled_score_column
-                           else "--score-column")
+    check_writable(args.out)
     costs = None
     if given:
         costs = {"fp": args.cost_fp, "fn": args.cost_fn, "tp": args.cost_tp,
@@ -238,18 +309,45 @@ def _handler(args: argparse.Namespace) -> int:
                 "costs: each error must cost more than the matching correct decision "
                 "(--cost-fp > --cost-tn and --cost-fn > --cost-tp)"
             )
-    from probwrap.report import write_report
+    with Stages("report", ["reading", "computing the report", "writing"]) as stages:
+        stages.start("reading")
+        frame = read_table(args.scores, exact=[args.score_column])
+        p = read_scores(frame, args.score_column, args.scores, scale=args.scale)
+        y, labels = read_labels(frame, args.label_column, args.scores,
+                                positive=args.positive_label)
+        if np.unique(y).shape[0] < 2:  # pragma: no cover - read_labels needs two labels
+            raise DataError(f"{args.scores}: both labels are needed")
+        q = None
+        if args.unlabelled is not None:
+            column = args.unlabelled_score_column or args.score_column
+            uframe = read_table(args.unlabelled, exact=[column])
+            q = read_scores(uframe, column, args.unlabelled, scale=args.scale,
+                            flag="--unlabelled-score-column" if args.unlabelled_score_column
+                            else "--score-column")
+        check_row_count("report", p.shape[0], args.scores, "labelled rows")
+        if q is not None:
+            check_row_count("report", q.shape[0], args.unlabelled, "unlabelled rows")
+        check_ranking("report", p, y, labels, args.scores)
+        if args.scale == "log-odds":
+            from probwrap.calibration import log_odds_to_proba
 
-    content = write_report(
-        args.out, y_true=y, y_prob=p, costs=costs, capacity=args.capacity,
-        unlabelled_prob=q, batch_size=args.batch_size, n_bins=args.bins,
-        n_resamples=args.resamples, random_state=args.seed, title=args.title,
-    )
-    line = f"wrote {args.out}: {content.n_rows} labelled rows"
+            p = log_odds_to_proba(p)
+            q = None if q is None else log_odds_to_proba(q)
+        content = _build_and_write(
+            args, stages, y_true=y, y_prob=p, costs=costs, capacity=args.capacity,
+            unlabelled_prob=q, batch_size=args.batch_size,
+        )
+    summary = {"out": args.out, "n_rows": int(content.n_rows),
+               "labels": {"negative": labels[0], "positive": labels[1]}}
+    line = f"wrote {args.out}: {content.n_rows} labelled rows (positive label {shown(labels[1])})"
     if content.chosen_cutoff is not None:
+        summary["cutoff"] = float(content.chosen_cutoff)
         line += f", cutoff {content.chosen_cutoff:.4f}"
     if content.target_prevalence is not None:
+        summary.update(source_prevalence=float(content.source_prevalence),
+                       target_prevalence=float(content.target_prevalence),
+                       shift_pvalue=float(content.shift_pvalue))
         line += (f", prevalence {content.source_prevalence:.4f} -> "
                  f"{content.target_prevalence:.4f} (shift p = {content.shift_pvalue:.3g})")
-    print(line)
+    _print_summary(args, line, summary)
     return 0

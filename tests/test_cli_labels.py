@@ -1,0 +1,152 @@
+"""Text labels are never read the wrong way round, and scores that rank the positive class
+below the other draw a warning.
+
+The check values come from the library called on 0/1 labels that the test codes itself
+(consistency tests), and from scikit-learn's ``roc_auc_score`` for the ranking warning.
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+from sklearn.metrics import roc_auc_score
+
+from probwrap.cli import main
+from probwrap.decision import search_cutoff
+
+
+@pytest.fixture(scope="module")
+def text_files(tmp_path_factory):
+    root = tmp_path_factory.mktemp("labels")
+    rng = np.random.default_rng(1)
+    p = rng.beta(1.0, 12.0, size=2000)  # rare positives: about 7 %
+    y = (rng.uniform(size=2000) < p).astype(int)
+    frame = pd.DataFrame({"risk": p, "damaged": np.where(y == 1, "yes", "no"),
+                          "status": np.where(y == 1, "damaged", "intact"), "y01": y})
+    frame.to_csv(root / "held.csv", index=False)
+    frame.to_parquet(root / "held.parquet")
+    return root, p, y
+
+
+def run(capsys, *argv):
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+@pytest.mark.parametrize("verb", ["cutoff", "calibrate", "report", "prevalence"])
+def test_text_labels_without_positive_label_are_refused_naming_the_option(
+    text_files, tmp_path, capsys, verb
+):
+    root, _, _ = text_files
+    # 'intact' sorts after 'damaged': the old rule made 'intact' (93 % of rows) positive
+    common = ["--score-column", "risk", "--label-column", "status"]
+    argv = {
+        "cutoff": ["cutoff", "--scores", root / "held.csv", *common, "--cost-fp", "3",
+                   "--cost-fn", "40"],
+        "calibrate": ["calibrate", "fit", "--scores", root / "held.csv", *common,
+                      "--out", tmp_path / "m.json"],
+        "report": ["report", "--scores", root / "held.csv", *common, "--out",
+                   tmp_path / "r.html"],
+        "prevalence": ["prevalence", "--unlabelled", root / "held.csv", "--score-column", "risk",
+                       "--reference", root / "held.csv", "--label-column", "status"],
+    }[verb]
+    code, out, err = run(capsys, *argv)
+    assert code == 1 and out == ""
+    line = err.strip().splitlines()[-1]
+    assert "--positive-label" in line and "'damaged'" in line and "'intact'" in line
+    assert not (tmp_path / "m.json").exists() and not (tmp_path / "r.html").exists()
+
+
+@pytest.mark.parametrize("name", ["held.csv", "held.parquet"])
+def test_cutoff_with_text_labels_equals_the_cutoff_on_coded_labels(text_files, capsys, name):
+    root, p, y = text_files
+    code, out, err = run(capsys, "cutoff", "--scores", root / name, "--score-column", "risk",
+                         "--label-column", "status", "--positive-label", "damaged",
+                         "--cost-fp", "3", "--cost-fn", "40", "--resamples", "0",
+                         "--format", "json")
+    assert code == 0, err
+    got = json.loads(out)
+    ref = search_cutoff(p, y, {"fp": 3.0, "fn": 40.0}, score_bounds=(0.0, 1.0))
+    assert got["cutoff"] == ref.cutoff
+    assert got["n_positive"] == int(y.sum())
+    assert got["labels"] == {"negative": "intact", "positive": "damaged"}
+    assert got["cutoff_interval"] is None
+
+
+def test_choosing_the_wrong_positive_class_warns_with_the_auc(text_files, capsys):
+    root, p, y = text_files
+    code, out, err = run(capsys, "cutoff", "--scores", root / "held.csv", "--score-column",
+                         "risk", "--label-column", "status", "--positive-label", "intact",
+                         "--cost-fp", "3", "--cost-fn", "40", "--resamples", "0")
+    assert code == 0
+    auc = roc_auc_score(1 - y, p)  # scikit-learn's AUC of the chosen (wrong) class
+    assert auc < 0.5
+    assert f"ROC AUC {auc:.3f} < 0.5" in err
+    assert "'intact' BELOW 'damaged'" in err and "--positive-label" in err
+    # the right class: no warning
+    code, _, err = run(capsys, "cutoff", "--scores", root / "held.csv", "--score-column",
+                       "risk", "--label-column", "status", "--positive-label", "damaged",
+                       "--cost-fp", "3", "--cost-fn", "40", "--resamples", "0")
+    assert code == 0 and "BELOW" not in err
+
+
+def test_report_accepts_text_labels_and_matches_coded_labels(text_files, tmp_path, capsys):
+    root, p, y = text_files
+    code, out, err = run(capsys, "report", "--scores", root / "held.csv", "--score-column",
+                         "risk", "--label-column", "damaged", "--positive-label", "yes",
+                         "--cost-fp", "3", "--cost-fn", "40", "--resamples", "10",
+                         "--out", tmp_path / "text.html", "--format", "json")
+    assert code == 0, err
+    text = json.loads(out)
+    code, out, err = run(capsys, "report", "--scores", root / "held.csv", "--score-column",
+                         "risk", "--label-column", "y01", "--cost-fp", "3", "--cost-fn", "40",
+                         "--resamples", "10", "--out", tmp_path / "coded.html",
+                         "--format", "json")
+    assert code == 0, err
+    coded = json.loads(out)
+    assert text["cutoff"] == coded["cutoff"]
+    assert text["labels"] == {"negative": "no", "positive": "yes"}
+    assert coded["labels"] == {"negative": 0, "positive": 1}
+
+
+def test_calibrate_fit_records_the_positive_label(text_files, tmp_path, capsys):
+    root, _, y = text_files
+    code, out, err = run(capsys, "calibrate", "fit", "--scores", root / "held.csv",
+                         "--score-column", "risk", "--label-column", "damaged",
+                         "--positive-label", "yes", "--method", "platt",
+                         "--out", tmp_path / "m.json")
+    assert code == 0, err
+    saved = json.loads((tmp_path / "m.json").read_text())
+    assert saved["metadata"]["labels"] == ["no", "yes"]
+    assert saved["metadata"]["n_positive"] == int(y.sum())
+    assert f"({int(y.sum())} with label 'yes')" in out
+
+
+@pytest.mark.parametrize(
+    ("labels", "positive", "expected"),
+    [
+        ([0, 1], None, [0, 1]),
+        ([True, False], None, [1, 0]),  # True is positive
+        ([0, 1], "0", [1, 0]),  # an explicit choice wins over 0/1
+        ([1, 2], "2", [0, 1]),
+        (["ok", "failed"], "failed", [0, 1]),
+    ],
+)
+def test_read_labels_rules(labels, positive, expected):
+    from probwrap.cli._common import read_labels
+
+    frame = pd.DataFrame({"y": labels})
+    y, _ = read_labels(frame, "y", "f.csv", positive=positive)
+    assert y.tolist() == expected
+
+
+@pytest.mark.parametrize("labels", [[1, 2], [-1, 1], ["ok", "failed"]])
+def test_read_labels_needs_the_option_for_labels_other_than_0_1(labels):
+    from probwrap.cli._common import DataError, read_labels
+
+    with pytest.raises(DataError, match="--positive-label"):
+        read_labels(pd.DataFrame({"y": labels}), "y", "f.csv")
