@@ -14,7 +14,7 @@ from sklearn.utils.metaestimators import available_if
 from sklearn.utils.validation import check_is_fitted
 
 from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, _multiclass_dask
-from .calibration._base import CalibrationMap
+from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
 from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
 from .calibration._isotonic import IsotonicMap
@@ -60,6 +60,16 @@ _TINY = np.nextafter(0.0, 1.0)
 _LOG_LOSS_FLOOR = 1e-15
 
 
+def _boundary_of(cal: Any) -> str | None:
+    """Why a fitted map (or any map of a one-vs-rest list) sits at a boundary, or None."""
+    maps = cal if isinstance(cal, list) else [cal]
+    for k, m in enumerate(maps):
+        hit = getattr(m, "boundary_", None)
+        if hit is not None:
+            return hit if len(maps) == 1 else f"class {k}: {hit}"
+    return None
+
+
 def _uses_interval(self: CalibrationWrapper) -> bool:
     method = getattr(self, "method_", self.method)
     return method == "venn_abers" or isinstance(self.method, VennAbersMap)
@@ -86,7 +96,11 @@ class CalibrationWrapper(HeldOutClassifierBase):
         before fitting), or ``"auto"``. ``"auto"`` scores
         every candidate map by cross-validated log loss on the held-out predictions and keeps the
         simplest map whose loss is within one standard error (of the paired per-row difference)
-        of the best one, so a richer map must win by more than its cross-validation noise.
+        of the best one, so a richer map must win by more than its cross-validation noise. A
+        candidate whose fit reaches a boundary is not eligible, and with too few rows of a
+        class to cross-validate ``"auto"`` warns and uses the most regularised map (Platt
+        scaling for binary, temperature scaling for multiclass problems); see
+        ``method_notes_``.
     cv : int, splitter or iterable of (train, test) pairs, default=5
         Folds for cross-fitting (stratified and shuffled when an int). With a frozen estimator
         only ``"auto"`` uses it, to score the candidate maps.
@@ -100,11 +114,14 @@ class CalibrationWrapper(HeldOutClassifierBase):
         log-odds it is Platt scaling); Venn–Abers is left out above 20,000 held-out rows, where
         it agrees with isotonic regression to within about 1/n but costs far more to
         cross-validate.
-    clip : float, default=1e-12
+    clip : float or None, default=None
         Only for the parametric maps (Platt, beta, temperature) fitted on ``predict_proba``
-        output: log-odds are clipped to ``±logit(1 - clip)`` (about ±27.6 by default, log-
-        probabilities floored at ``log(clip)``), so that a few extreme and confidently wrong rows
-        cannot dominate the fit. Order-based maps (isotonic, binning, Venn–Abers) always see the
+        output: log-odds are clipped to ``±logit(1 - clip)`` (log-probabilities floored at
+        ``log(clip)``), so that a few extreme and confidently wrong rows cannot dominate the
+        fit. ``None`` chooses it from the held-out probabilities: half the smallest non-zero
+        probability (for a random forest of ``n`` trees, whose probabilities are multiples of
+        ``1/n``, that is ``1/(2n)``), kept within ``[1e-12, 0.25]``; the value used is
+        ``clip_``. Order-based maps (isotonic, binning, Venn–Abers) always see the
         full-resolution log-odds ``log p1 - log p0``, which keep the order of probabilities deep
         in the tails; exact zeros become the smallest positive float.
     tally_resolution : float, default=1e-3
@@ -120,8 +137,18 @@ class CalibrationWrapper(HeldOutClassifierBase):
     method_ : str
         Name of the map in use.
     method_scores_ : dict
-        ``"auto"`` only: cross-validated log loss of every candidate, with its standard error
-        relative to the best as ``method_scores_[name] = (loss, se)``.
+        ``"auto"`` only: cross-validated log loss of every candidate that could be scored, with
+        the standard error of its difference from the best eligible one, as
+        ``method_scores_[name] = (loss, se)``. Empty when there were too few rows of a class
+        to cross-validate.
+    method_notes_ : dict
+        ``"auto"`` only: ``method_notes_[name]`` says why a candidate was not eligible (its fit
+        reached a boundary: a temperature at the end of its range, a beta or isotonic fit to
+        classes the scores separate), why it could not be scored (the error of a failed fold
+        fit), which warnings its fold fits raised, or why the chosen map was chosen without
+        cross-validation.
+    clip_ : float
+        The ``clip`` in use (chosen from the held-out probabilities when ``clip=None``).
     response_ : str
         Which output of the estimator was calibrated (``"predict_proba"`` or
         ``"decision_function"``).
@@ -155,7 +182,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
         n_jobs: int | None = None,
         random_state: Any = None,
         candidates: Any = None,
-        clip: float = DEFAULT_CLIP,
+        clip: float | None = None,
         tally_resolution: float = 1e-3,
     ) -> None:
         self.estimator = estimator
@@ -191,18 +218,52 @@ class CalibrationWrapper(HeldOutClassifierBase):
             return self._fit_multiclass_dask(X, y, sample_weight)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
         self.response_ = ho.response
+        self.clip_ = self._choose_clip(ho.values, ho.sample_weight)
         scores = self._to_scores(ho.values)
+        w = self._count_scale_weights(ho.sample_weight)
         if isinstance(self.method, CalibrationMap):
             self.method_ = type(self.method).__name__
             template = self.method
         elif self.method == "auto":
-            self.method_, self.method_scores_ = self._choose(ho, scores)
+            self.method_, self.method_scores_, self.method_notes_ = self._choose(ho, scores, w)
             template = CALIBRATION_METHODS[self.method_]()
         else:
             self.method_ = self.method
             template = CALIBRATION_METHODS[self.method]()
-        self.calibrator_ = self._fit_map(template, scores, ho.y_index, ho.sample_weight)
+        self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
+        if self.method == "auto":
+            hit = _boundary_of(self.calibrator_)
+            if hit is not None and self.method_ in self.method_scores_:
+                # the fit on all rows reached a boundary that no fold fit reached: fall back
+                self.method_notes_[self.method_] = (
+                    f"not eligible: the fit on all held-out rows reached a boundary ({hit})"
+                )
+                binary = scores.ndim == 1
+                fallback = self._fallback_name(self._auto_names(len(ho.y_index), binary), binary)
+                warnings.warn(
+                    f"CalibrationWrapper(method='auto'): {self.method_!r} reached a boundary on "
+                    f"all held-out rows ({hit}); using {fallback!r} instead.",
+                    UserWarning,
+                    stacklevel=2,
+                )
+                self.method_ = fallback
+                self.calibrator_ = self._fit_map(
+                    CALIBRATION_METHODS[fallback](), scores, ho.y_index, w
+                )
         return self
+
+    def _count_scale_weights(self, w: np.ndarray) -> np.ndarray:
+        """Weights as row counts for the maps (see ``docs/calibration.md``, "Weights")."""
+        out, rescaled = count_weights(w)
+        if rescaled:
+            warnings.warn(
+                "CalibrationWrapper: `sample_weight` sums to less than the number of rows, so "
+                "the weights cannot be row frequencies; for the calibration map they are "
+                f"rescaled to sum to Kish's effective sample size ({out.sum():.4g}).",
+                WeightScaleWarning,
+                stacklevel=3,
+            )
+        return out
 
     def _fit_multiclass_dask(self, X: Any, y: Any, sample_weight: Any) -> CalibrationWrapper:
         """Multiclass Dask rows with a frozen estimator: temperature scaling by reductions over
@@ -233,8 +294,12 @@ class CalibrationWrapper(HeldOutClassifierBase):
             )
         if self.method == "auto":
             self._candidate_names()
-        if not (isinstance(self.clip, numbers.Real) and 0.0 < self.clip < 0.5):
-            raise ValueError(f"`clip` must be a float in (0, 0.5); got {self.clip!r}.")
+        if self.clip is not None and not (
+            isinstance(self.clip, numbers.Real)
+            and not isinstance(self.clip, bool)
+            and 0.0 < self.clip < 0.5
+        ):
+            raise ValueError(f"`clip` must be None or a float in (0, 0.5); got {self.clip!r}.")
 
     def _candidate_names(self) -> list[str]:
         names = list(CALIBRATION_METHODS) if self.candidates is None else list(self.candidates)
@@ -247,6 +312,31 @@ class CalibrationWrapper(HeldOutClassifierBase):
         return names
 
     # -- scores ------------------------------------------------------------------------------
+    def _choose_clip(self, values: np.ndarray, w: np.ndarray) -> float:
+        """``clip`` as given, or half the smallest non-zero held-out probability.
+
+        Probabilities of rows of zero weight are ignored. The result is kept within
+        ``[DEFAULT_CLIP, 0.25]``: a model whose outputs reach far into the tails (naive Bayes)
+        keeps the previous default, a coarse one (a forest of ``n`` trees outputs multiples of
+        ``1/n``) gets ``1/(2n)``, so exact 0 and 1 sit just beyond its own resolution instead of
+        at log-odds of ``±27.6``.
+        """
+        if self.clip is not None:
+            return float(self.clip)
+        if self.response_ == "decision_function":
+            return DEFAULT_CLIP  # not used: decision values are not clipped
+        v = values[w > 0] if values.shape[0] == w.shape[0] else values
+        positive = v[v > 0]
+        if positive.size == 0:
+            return DEFAULT_CLIP
+        return float(min(max(0.5 * positive.min(), DEFAULT_CLIP), 0.25))
+
+    def _clip_value(self) -> float:
+        clip = getattr(self, "clip_", None)
+        if clip is None:
+            clip = DEFAULT_CLIP if self.clip is None else self.clip
+        return float(clip)
+
     def _to_scores(self, values: np.ndarray) -> np.ndarray:
         """Inner-estimator output -> log-odds (binary, (n,)) or log-probabilities (n, k).
 
@@ -282,10 +372,11 @@ class CalibrationWrapper(HeldOutClassifierBase):
         """
         if self.response_ == "decision_function" or isinstance(cal, _ORDER_BASED):
             return scores
+        clip = self._clip_value()
         if scores.ndim == 1:
-            bound = np.log1p(-self.clip) - np.log(self.clip)
+            bound = np.log1p(-clip) - np.log(clip)
             return np.clip(scores, -bound, bound)
-        return np.maximum(scores, np.log(self.clip))
+        return np.maximum(scores, np.log(clip))
 
     # -- maps ----------------------------------------------------------------------------------
     def _fit_map(self, template: CalibrationMap, scores, y_index, w):
@@ -297,20 +388,24 @@ class CalibrationWrapper(HeldOutClassifierBase):
             )
         ovr = self._one_vs_rest_scores(scores)
         maps = []
-        for k in range(scores.shape[1]):
+        n_classes = scores.shape[1]
+        for k in range(n_classes):
             yk = (y_index == k).astype(int)
             wk_pos = w[yk == 1].sum()
             if wk_pos == 0 or wk_pos == w.sum():
                 # This class is absent from (or alone in) the held-out rows: no binary map can be
-                # fitted; its calibrated probability is the share it has there (0 or 1).
-                maps.append(float(wk_pos > 0))
+                # fitted; its calibrated probability is its smoothed share there (rule of
+                # succession), 1 / (N + k) or (N + 1) / (N + k), never exactly 0 or 1.
+                total = float(w.sum())
+                maps.append(float((wk_pos + 1.0) / (total + n_classes)))
                 continue
             maps.append(
                 clone(template).fit(self._map_input(template, ovr[:, k]), yk, sample_weight=w)
             )
         if any(isinstance(m, float) for m in maps):
             warnings.warn(
-                "Some classes have no held-out rows; their calibrated probability is set to 0.",
+                "Some classes have no held-out rows; their calibrated probability is set to "
+                "1 / (N + k) (N the held-out weight, k the number of classes).",
                 UserWarning,
                 stacklevel=3,
             )
@@ -356,60 +451,133 @@ class CalibrationWrapper(HeldOutClassifierBase):
             raise ValueError("`cv` must partition the rows to score the candidate maps.")
         return fold
 
-    def _choose(self, ho: HeldOutPredictions, scores: np.ndarray):
+    def _auto_names(self, n_rows: int, binary: bool) -> list[str]:
+        """The candidates ``"auto"`` scores, in the order given (see ``candidates``)."""
         names = self._candidate_names()
         if self.candidates is None:
             names = [n for n in names if n not in _AUTO_EXCLUDED_BY_DEFAULT]
-            if scores.ndim == 1:
+            if binary:
                 names = [n for n in names if n not in _AUTO_MULTICLASS_ONLY]
-        if self.candidates is None and ho.y_index.shape[0] > _VENN_ABERS_AUTO_MAX_ROWS:
+        if self.candidates is None and n_rows > _VENN_ABERS_AUTO_MAX_ROWS:
             # Beyond this size the Venn-Abers interval is narrower than 1/n and its merged
             # probability coincides with isotonic regression to that order, while its fit costs
             # far more; by default it is not among the candidates then (pass `candidates` to
             # include it anyway).
             names = [n for n in names if n != "venn_abers"]
-        fold = self._selection_folds(ho, scores)
-        y, w = ho.y_index, ho.sample_weight
-        losses: dict[str, np.ndarray] = {}
-        for name in names:
-            per_row = np.empty(y.shape[0])
-            ok = True
-            for f in np.unique(fold):
-                test = fold == f
-                train = ~test
+        return names
+
+    def _fallback_name(self, names: list[str], binary: bool) -> str:
+        """The most regularised candidate: Platt (binary) or temperature (multiclass) scaling
+        with smoothed targets when listed, else the candidate with the fewest parameters."""
+        for preferred in (("platt", "temperature") if binary else ("temperature", "platt")):
+            if preferred in names:
+                return preferred
+        return min(names, key=lambda nm: (CALIBRATION_METHODS[nm]().complexity, names.index(nm)))
+
+    def _fold_losses(self, name, scores, y, w, fold, folds, notes):
+        """Out-of-fold log loss per row of one candidate; ``None`` when a fold fit fails.
+
+        Warnings raised by the fold fits are recorded in ``notes`` (not shown one by one);
+        a fit that reaches a boundary of its parameter space makes the candidate ineligible.
+        """
+        per_row = np.empty(y.shape[0])
+        boundary = None
+        seen: list[str] = []
+        for f in folds:
+            test = fold == f
+            train = ~test
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
                 try:
-                    with warnings.catch_warnings():
-                        warnings.simplefilter("ignore")
-                        cal = self._fit_map(CALIBRATION_METHODS[name](), scores[train], y[train], w[train])
-                except ValueError:
-                    # e.g. a training part with one class only: this candidate cannot be scored.
-                    ok = False
-                    break
-                q = self._apply_map(cal, scores[test])
-                per_row[test] = -np.log(np.maximum(q[np.arange(q.shape[0]), y[test]], _LOG_LOSS_FLOOR))
-            if ok:
-                losses[name] = per_row
-        if not losses:
-            raise ValueError(
-                "No candidate map could be scored by cross-validation on the held-out "
-                "predictions; every fold needs both classes. Pass an explicit `method`."
+                    cal = self._fit_map(
+                        CALIBRATION_METHODS[name](), scores[train], y[train], w[train]
+                    )
+                except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
+                    notes[name] = f"failed in fold {f}: {exc}"
+                    return None, None
+            for item in caught:
+                if issubclass(item.category, WeightScaleWarning):
+                    continue  # the wrapper has already put the weights on the count scale
+                text = str(item.message)
+                if text not in seen:
+                    seen.append(text)
+            if boundary is None:
+                hit = _boundary_of(cal)
+                if hit is not None:
+                    boundary = f"fold {f}: {hit}"
+            q = self._apply_map(cal, scores[test])
+            per_row[test] = -np.log(
+                np.maximum(q[np.arange(q.shape[0]), y[test]], _LOG_LOSS_FLOOR)
             )
-        total_w = w.sum()
-        means = {name: float(np.dot(w, loss) / total_w) for name, loss in losses.items()}
-        best = min(means, key=means.get)
+        if boundary is not None:
+            notes[name] = f"not eligible: the fit reached a boundary ({boundary})"
+        elif seen:
+            notes[name] = "warnings in the fold fits: " + " | ".join(seen)
+        return per_row, boundary
+
+    def _choose(self, ho: HeldOutPredictions, scores: np.ndarray, w: np.ndarray):
+        """Pick a map by cross-validated log loss (one-standard-error rule).
+
+        Returns ``(name, scores, notes)``: ``scores[name] = (loss, se)`` for every candidate
+        scored, ``notes[name]`` the reason a candidate was not eligible or could not be scored.
+        """
+        y = ho.y_index
+        binary = scores.ndim == 1
+        names = self._auto_names(y.shape[0], binary)
+        notes: dict[str, str] = {}
+        present = np.bincount(y[w > 0], minlength=len(self.classes_))
+        present = present[present > 0]
+        if present.shape[0] < 2 or present.min() < 2:
+            fallback = self._fallback_name(names, binary)
+            reason = (
+                f"a class has only {int(present.min())} held-out row(s), too few to score "
+                f"candidate maps by cross-validation; using {fallback!r} (smoothed targets), "
+                "the most regularised map"
+            )
+            warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
+            notes[fallback] = "chosen without cross-validation: " + reason
+            return fallback, {}, notes
+        fold = self._selection_folds(ho, scores)
+        folds = np.unique(fold)
+        losses: dict[str, np.ndarray] = {}
+        eligible: list[str] = []
+        for name in names:
+            per_row, boundary = self._fold_losses(name, scores, y, w, fold, folds, notes)
+            if per_row is None:
+                continue
+            losses[name] = per_row
+            if boundary is None:
+                eligible.append(name)
+        wn = w / w.sum()
+        # Kish's effective sample size: the standard error does not depend on the weights' scale
+        n_eff = float(w.sum() ** 2 / (w @ w))
+        means = {name: float(wn @ loss) for name, loss in losses.items()}
         scores_out: dict[str, tuple[float, float]] = {}
-        for name, loss in losses.items():
-            d = loss - losses[best]
-            dbar = np.dot(w, d) / total_w
-            # weights count as row frequencies (weight 2 == two rows)
-            var = np.dot(w, (d - dbar) ** 2) / max(total_w - 1.0, 1.0)
-            scores_out[name] = (means[name], float(np.sqrt(var / total_w)))
-        order = sorted(losses, key=lambda nm: (CALIBRATION_METHODS[nm]().complexity, names.index(nm)))
+        if eligible:
+            best = min(eligible, key=means.get)
+            for name, loss in losses.items():
+                d = loss - losses[best]
+                dbar = float(wn @ d)
+                var = float(wn @ (d - dbar) ** 2) * n_eff / max(n_eff - 1.0, 1.0)
+                scores_out[name] = (means[name], float(np.sqrt(var / n_eff)))
+        else:
+            scores_out = {name: (means[name], float("nan")) for name in losses}
+        order = sorted(
+            eligible, key=lambda nm: (CALIBRATION_METHODS[nm]().complexity, names.index(nm))
+        )
         for name in order:
             loss, se = scores_out[name]
             if loss - means[best] <= se:
-                return name, scores_out
-        return best, scores_out  # pragma: no cover - the best always qualifies
+                return name, scores_out, notes
+        fallback = self._fallback_name(names, binary)
+        reason = (
+            "no candidate map could be scored and used: "
+            + "; ".join(f"{nm}: {txt}" for nm, txt in notes.items())
+            + f"; using {fallback!r} (smoothed targets), the most regularised map"
+        )
+        warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
+        notes.setdefault(fallback, "chosen as the fallback: no candidate was eligible")
+        return fallback, scores_out, notes
 
     # -- prediction ----------------------------------------------------------------------------
     def _calibrated(self, X: Any) -> np.ndarray:

@@ -18,7 +18,7 @@ from sklearn.preprocessing import StandardScaler
 from sklearn.svm import LinearSVC
 
 from probwrap import CalibrationWrapper
-from probwrap.calibration import IsotonicMap, PlattMap
+from probwrap.calibration import IsotonicMap, PlattMap, TemperatureMap
 
 SKLEARN_VERSION = tuple(int(p) for p in sklearn.__version__.split(".")[:2])
 
@@ -40,8 +40,10 @@ def test_isotonic_matches_calibrated_classifier_cv_binary(frozen_cancer):
     # Reference: scikit-learn CalibratedClassifierCV(method="isotonic") on the same frozen model
     # and rows. For logistic regression its decision_function equals our log-odds of
     # predict_proba, and both interpolate linearly between the isotonic fitted points.
+    # The plain fit (smooth_targets=False) is the like-for-like comparison.
     base, X, y = frozen_cancer
-    ours = CalibrationWrapper(FrozenEstimator(base), method="isotonic").fit(X, y)
+    ours = CalibrationWrapper(FrozenEstimator(base), method=IsotonicMap(smooth_targets=False))
+    ours.fit(X, y)
     ref = CalibratedClassifierCV(FrozenEstimator(base), method="isotonic").fit(X, y)
     grid = np.vstack([X, X[:50] * 1.01])
     np.testing.assert_allclose(ours.predict_proba(grid), ref.predict_proba(grid), atol=1e-7)
@@ -67,10 +69,16 @@ def test_isotonic_matches_calibrated_classifier_cv_multiclass():
 
 def test_platt_close_to_calibrated_classifier_cv_sigmoid(frozen_cancer):
     # Reference: scikit-learn's sigmoid calibration, which fits Platt (1999) with smoothed targets.
+    # PlattMap also keeps its output within [floor_, 1 - floor_], floor_ = 1 / (N + 2): the
+    # reference is scikit-learn's output moved into that range.
     base, X, y = frozen_cancer
     ours = CalibrationWrapper(FrozenEstimator(base), method=PlattMap()).fit(X, y)
     ref = CalibratedClassifierCV(FrozenEstimator(base), method="sigmoid").fit(X, y)
-    np.testing.assert_allclose(ours.predict_proba(X), ref.predict_proba(X), atol=2e-4)
+    floor = 1 / (len(y) + 2)
+    assert ours.calibrator_.floor_ == pytest.approx(floor)
+    expected = np.clip(ref.predict_proba(X), floor, 1 - floor)
+    assert np.mean(ref.predict_proba(X) < floor) > 0.05  # the floor matters on these rows
+    np.testing.assert_allclose(ours.predict_proba(X), expected, atol=2e-4)
 
 
 @pytest.mark.skipif(SKLEARN_VERSION < (1, 8), reason="temperature scaling arrived in scikit-learn 1.8")
@@ -79,7 +87,9 @@ def test_temperature_close_to_calibrated_classifier_cv_temperature():
     X, y = load_digits(return_X_y=True)
     X_tr, X_cal, y_tr, y_cal = train_test_split(X, y, test_size=0.5, random_state=0, stratify=y)
     base = make_pipeline(StandardScaler(), LogisticRegression(C=10.0, max_iter=3000)).fit(X_tr, y_tr)
-    ours = CalibrationWrapper(FrozenEstimator(base), method="temperature").fit(X_cal, y_cal)
+    # scikit-learn fits the raw labels: compare with smooth_targets=False
+    ours = CalibrationWrapper(FrozenEstimator(base), method=TemperatureMap(smooth_targets=False))
+    ours.fit(X_cal, y_cal)
     ref = CalibratedClassifierCV(FrozenEstimator(base), method="temperature").fit(X_cal, y_cal)
     np.testing.assert_allclose(ours.predict_proba(X_cal), ref.predict_proba(X_cal), atol=5e-3)
 
@@ -93,7 +103,8 @@ def test_cross_fitted_matches_manual_held_out_fit():
     X, y = load_breast_cancer(return_X_y=True)
     X = X[:, :6]
     est = LogisticRegression(max_iter=3000)
-    ours = CalibrationWrapper(est, method="isotonic", cv=4, random_state=2).fit(X, y)
+    ours = CalibrationWrapper(est, method=IsotonicMap(smooth_targets=False), cv=4, random_state=2)
+    ours.fit(X, y)
     folds = StratifiedKFold(4, shuffle=True, random_state=2)
     oof = cross_val_predict(est, X, y, cv=folds, method="predict_proba")[:, 1]
     oof = np.clip(oof, 1e-12, 1 - 1e-12)

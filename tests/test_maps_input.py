@@ -154,9 +154,14 @@ def test_separation_warns_and_stays_finite():
     with pytest.warns(UserWarning, match="separate the two classes perfectly"):
         b = BetaMap().fit(S, y)
     assert np.all(np.isfinite(b.predict(S)))
+    assert b.boundary_ is not None  # not eligible in CalibrationWrapper(method="auto")
     with pytest.warns(UserWarning, match="end of the search range"):
-        t = TemperatureMap().fit(S, y)
+        t = TemperatureMap(smooth_targets=False).fit(S, y)
     assert np.all(np.isfinite(t.predict(S)))
+    assert t.boundary_.startswith("temperature at the low end")
+    # smoothed targets (the default) keep the temperature finite and inside the range
+    smooth = TemperatureMap().fit(S, y)
+    assert smooth.boundary_ is None and 0.0 < smooth.temperature_ < np.inf
 
 
 def test_scores_against_the_labels_warn_in_temperature():
@@ -173,8 +178,8 @@ def test_all_scores_equal_gives_the_base_rate(cls):
     w = np.array([1, 1, 1, 1, 1, 1, 1, 3.0])  # weighted rate (4 - 1 + 3) / 10 = 0.6
     out = cls().fit(s, Y, sample_weight=w).predict([-1.0, 0.0, 1.0])
     assert np.all(np.isfinite(out))
-    if cls is PlattMap:
-        # Platt's smoothed targets move the rate: (6 + 1) / (6 + 2) and 1 / (4 + 2) give
+    if cls in (PlattMap, IsotonicMap, BetaMap):
+        # Platt's smoothed targets (the default of all three) move the rate: (6 + 1) / (6 + 2) and 1 / (4 + 2) give
         # (6 * 7/8 + 4 * 1/6) / 10
         np.testing.assert_allclose(out, (6 * 7 / 8 + 4 / 6) / 10, atol=1e-10)
     elif cls is TemperatureMap:

@@ -121,7 +121,7 @@ def test_isotonic_matches_scikit_learn_with_weights_and_ties():
         y = (rng.random(n) < expit(1.5 * s)).astype(float)
         y[:2] = [0.0, 1.0]
         w = rng.uniform(0.1, 3.0, size=n)
-        m = IsotonicMap().fit(s, y, sample_weight=w)
+        m = IsotonicMap(smooth_targets=False).fit(s, y, sample_weight=w)
         # scikit-learn IsotonicRegression(out_of_bounds="clip"): the reference fit
         ref = IsotonicRegression(out_of_bounds="clip").fit(s, y, sample_weight=w)
         grid = np.concatenate([np.unique(s), np.linspace(s.min() - 3, s.max() + 3, 101)])
@@ -138,7 +138,7 @@ def test_isotonic_large_sample_matches_scikit_learn():
     y = (rng.random(n) < expit(s)).astype(float)
     w = rng.uniform(0.1, 2.0, size=n)
     grid = np.linspace(-5, 5, 2001)
-    got = IsotonicMap().fit(s, y, sample_weight=w).predict(grid)
+    got = IsotonicMap(smooth_targets=False).fit(s, y, sample_weight=w).predict(grid)
     ref = IsotonicRegression(out_of_bounds="clip").fit(s, y, sample_weight=w).predict(grid)
     np.testing.assert_allclose(got, ref, atol=1e-12)
 
@@ -146,17 +146,43 @@ def test_isotonic_large_sample_matches_scikit_learn():
 def test_isotonic_on_bundled_data_matches_scikit_learn(cancer_scores):
     s, y = cancer_scores
     w = _weights(s.shape[0], seed=3)
-    m = IsotonicMap().fit(s, y, sample_weight=w)
+    m = IsotonicMap(smooth_targets=False).fit(s, y, sample_weight=w)
     ref = IsotonicRegression(out_of_bounds="clip").fit(s, y, sample_weight=w)
     grid = np.linspace(-30, 10, 400)
     np.testing.assert_allclose(m.predict(grid), ref.predict(grid), atol=1e-12)
 
 
+def test_isotonic_smoothed_equals_scikit_learn_on_platt_targets(cancer_scores):
+    # The default fit pools Platt's (1999, section 2.2) smoothed targets
+    # t+ = (N+ + 1) / (N+ + 2), t- = 1 / (N- + 2): scikit-learn's IsotonicRegression fitted to
+    # those targets is the reference, and its levels lie in [t-, t+].
+    s, y = cancer_scores
+    w = _weights(s.shape[0], seed=13)
+    n_pos, n_neg = w @ y, w @ (1 - y)
+    t = np.where(y == 1, (n_pos + 1) / (n_pos + 2), 1 / (n_neg + 2))
+    ref = IsotonicRegression(out_of_bounds="clip").fit(s, t, sample_weight=w)
+    m = IsotonicMap().fit(s, y, sample_weight=w)
+    grid = np.linspace(-30, 10, 400)
+    np.testing.assert_allclose(m.predict(grid), ref.predict(grid), atol=1e-12)
+    assert m.values_.min() >= 1 / (n_neg + 2) - 1e-15
+    assert m.values_.max() <= (n_pos + 1) / (n_pos + 2) + 1e-15
+    assert m.floor_ == pytest.approx(1 / (w.sum() + 2))
+    # the plain fit reaches exact 0 and 1 here; the smoothed one never does
+    raw = IsotonicMap(smooth_targets=False).fit(s, y, sample_weight=w)
+    assert raw.values_.min() == 0.0 and raw.values_.max() == 1.0
+
+
 def test_isotonic_hand_worked():
     # y = 1, 0 at scores 0, 1 violate the order: PAV pools them to (1 + 0) / 2 = 0.5;
     # with weights 3 and 1 the pooled value is (3 * 1 + 1 * 0) / 4 = 0.75 (Ayer et al. 1955)
-    m = IsotonicMap().fit([-1.0, 0.0, 1.0, 2.0], [0, 1, 0, 1], sample_weight=[1, 3, 1, 1])
+    m = IsotonicMap(smooth_targets=False).fit(
+        [-1.0, 0.0, 1.0, 2.0], [0, 1, 0, 1], sample_weight=[1, 3, 1, 1]
+    )
     np.testing.assert_allclose(m.values_, [0.0, 0.75, 0.75, 1.0])
+    # smoothed: N+ = 4, N- = 2, so t+ = 5/6 and t- = 1/4; the pooled pair is
+    # (3 * 5/6 + 1 * 1/4) / 4 = 11/16
+    m = IsotonicMap().fit([-1.0, 0.0, 1.0, 2.0], [0, 1, 0, 1], sample_weight=[1, 3, 1, 1])
+    np.testing.assert_allclose(m.values_, [0.25, 11 / 16, 11 / 16, 5 / 6])
 
 
 # --------------------------------------------------------------------------- beta
@@ -169,11 +195,27 @@ def test_beta_matches_statsmodels_glm_when_constraints_inactive(cancer_scores):
         tol=1e-14
     )
     assert ref.params[1] > 0 and ref.params[2] > 0  # the constraints a, b >= 0 are inactive
-    m = BetaMap().fit(s, y, sample_weight=w)
+    m = BetaMap(smooth_targets=False).fit(s, y, sample_weight=w)
     assert m.c_ == pytest.approx(ref.params[0], abs=1e-7)
     assert m.a_ == pytest.approx(ref.params[1], abs=1e-7)
     assert m.b_ == pytest.approx(ref.params[2], abs=1e-7)
     np.testing.assert_allclose(m.predict(s), ref.predict(sm.add_constant(F)), atol=1e-9)
+
+
+def test_beta_smoothed_matches_statsmodels_glm_on_platt_targets(cancer_scores):
+    # default: the same logistic regression on [ln p, -ln(1 - p)] fitted to Platt's (1999)
+    # smoothed targets; statsmodels GLM Binomial accepts fractional responses
+    s, y = cancer_scores
+    w = _weights(s.shape[0], seed=14)
+    n_pos, n_neg = w @ y, w @ (1 - y)
+    t = np.where(y == 1, (n_pos + 1) / (n_pos + 2), 1 / (n_neg + 2))
+    F = np.column_stack([log_expit(s), -log_expit(-s)])
+    ref = sm.GLM(t, sm.add_constant(F), family=sm.families.Binomial(), freq_weights=w).fit(
+        tol=1e-14
+    )
+    assert ref.params[1] > 0 and ref.params[2] > 0
+    m = BetaMap().fit(s, y, sample_weight=w)
+    np.testing.assert_allclose([m.c_, m.a_, m.b_], ref.params, atol=1e-7)
 
 
 def test_beta_with_a_binding_constraint_matches_bounded_optimum():
@@ -187,7 +229,7 @@ def test_beta_with_a_binding_constraint_matches_bounded_optimum():
     F = np.column_stack([log_expit(s), -log_expit(-s)])
     free = sm.GLM(y, sm.add_constant(F), family=sm.families.Binomial()).fit(tol=1e-14)
     assert free.params[1] < 0  # the constraint binds
-    m = BetaMap().fit(s, y)
+    m = BetaMap(smooth_targets=False).fit(s, y)
     assert m.a_ == 0.0 and m.b_ > 0
 
     # reference 1: SciPy L-BFGS-B on the same log loss with bounds a, b >= 0
@@ -224,7 +266,7 @@ def test_temperature_binary_matches_brute_force(cancer_scores):
         eta = s / np.exp(log_t)
         return float(wn @ (np.logaddexp(0, eta) - y * eta))
 
-    m = TemperatureMap().fit(s, y, sample_weight=w)
+    m = TemperatureMap(smooth_targets=False).fit(s, y, sample_weight=w)
     best, step = _brute_log_t(loss, 0.0)
     assert abs(np.log(m.temperature_) - best) <= step
     assert loss(np.log(m.temperature_)) <= loss(best) + 1e-12
@@ -240,7 +282,7 @@ def test_temperature_multiclass_matches_brute_force(digits_logits):
         lp = log_softmax(z / np.exp(log_t), axis=1)
         return float(-(wn @ lp[np.arange(len(y)), y]))
 
-    m = TemperatureMap().fit(z, y, sample_weight=w)
+    m = TemperatureMap(smooth_targets=False).fit(z, y, sample_weight=w)
     best, step = _brute_log_t(loss, 2.0, half_width=8.0)
     assert abs(np.log(m.temperature_) - best) <= step
     assert loss(np.log(m.temperature_)) <= loss(best) + 1e-12
@@ -254,8 +296,36 @@ def test_temperature_closed_form_example():
     # With e = exp(4 / T) the loss is -3 ln(e / (e + 2)) - ln(1 / (e + 2)); setting the
     # derivative -3 / e + 4 / (e + 2) to zero gives e = 6, so T = 4 / ln 6.
     z = np.array([[4.0, 0, 0], [0, 4.0, 0], [0, 0, 4.0], [4.0, 0, 0]])
-    m = TemperatureMap().fit(z, [0, 1, 2, 1])
+    m = TemperatureMap(smooth_targets=False).fit(z, [0, 1, 2, 1])
     assert m.temperature_ == pytest.approx(4 / np.log(6), rel=1e-8)
+    # Smoothed targets: (N_y + 1) / (N_y + 2) on the true class, 1 / (2 (N_y + 2)) on each of the
+    # two others; class counts 1, 2, 1. The top-scored column gets targets 2/3, 3/4, 2/3 and
+    # 1/8 (the wrong row). The slope vanishes where the model's top probability e / (e + 2)
+    # equals their mean 53/96, so e = 106/43 and T = 4 / ln(106/43).
+    m = TemperatureMap().fit(z, [0, 1, 2, 1])
+    assert m.temperature_ == pytest.approx(4 / np.log(106 / 43), rel=1e-8)
+
+
+def test_temperature_smoothed_matches_scipy_minimisation(digits_logits):
+    # the smoothed objective (cross-entropy against the targets of TemperatureMap's docstring)
+    # minimised directly by SciPy's bounded scalar search on log T
+    from scipy.optimize import minimize_scalar
+
+    z, y = digits_logits
+    w = _weights(z.shape[0], seed=15)
+    k = z.shape[1]
+    n_y = np.bincount(y, weights=w, minlength=k)[y]
+    t = np.tile((1 / ((n_y + 2) * (k - 1)))[:, None], (1, k))
+    t[np.arange(len(y)), y] = (n_y + 1) / (n_y + 2)
+    wn = w / w.sum()
+
+    def loss(log_t):
+        return float(-(wn @ np.sum(t * log_softmax(z / np.exp(log_t), axis=1), axis=1)))
+
+    res = minimize_scalar(loss, bounds=(-5, 10), method="bounded", options={"xatol": 1e-10})
+    m = TemperatureMap().fit(z, y, sample_weight=w)
+    assert np.log(m.temperature_) == pytest.approx(res.x, abs=1e-5)
+    assert m.floor_ == pytest.approx(1 / (w.sum() + k))
 
 
 # --------------------------------------------------------------------------- binning

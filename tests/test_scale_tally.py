@@ -93,13 +93,19 @@ def test_isotonic_from_tally_is_exact_on_binned_scores():
     grid = rng.integers(-300, 300, size=30_000) * r
     y = (rng.random(grid.shape[0]) < expit(grid)).astype(int)
     s_rows, y_rows, w_rows = tally_scores(grid, y, resolution=r).to_rows()
-    from_tally = IsotonicMap().fit(s_rows, y_rows, sample_weight=w_rows)
+    from_tally = IsotonicMap(smooth_targets=False).fit(s_rows, y_rows, sample_weight=w_rows)
     points = np.unique(grid)
     # reference: scikit-learn's IsotonicRegression on every row
     reference = IsotonicRegression(out_of_bounds="clip", y_min=0, y_max=1).fit(grid, y)
     np.testing.assert_allclose(from_tally.predict(points), reference.predict(points), atol=1e-12)
-    full = IsotonicMap().fit(grid, y)
+    full = IsotonicMap(smooth_targets=False).fit(grid, y)
     np.testing.assert_allclose(from_tally.predict(points), full.predict(points), atol=1e-12)
+    # the default (smoothed) fits agree as well: the tally keeps the weighted class counts
+    np.testing.assert_allclose(
+        IsotonicMap().fit(s_rows, y_rows, sample_weight=w_rows).predict(points),
+        IsotonicMap().fit(grid, y).predict(points),
+        atol=1e-12,
+    )
 
 
 def test_isotonic_from_tally_close_to_full_data_fit_on_continuous_scores():

@@ -1,6 +1,6 @@
 """Calibration maps (array core): fitted on held-out scores, they return probabilities."""
 
-from ._base import NONPARAMETRIC, CalibrationMap
+from ._base import NONPARAMETRIC, CalibrationMap, WeightScaleWarning
 from ._beta import BetaMap
 from ._binning import BinningMap
 from ._isotonic import IsotonicMap
@@ -24,6 +24,7 @@ __all__ = [
     "TemperatureMap",
     "VectorScalingMap",
     "VennAbersMap",
+    "WeightScaleWarning",
     "log_odds_to_proba",
     "map_from_dict",
     "map_score_scale",

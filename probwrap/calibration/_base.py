@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from typing import Any
 
 import numpy as np
@@ -16,10 +17,62 @@ from .._validation import (
     check_scores,
 )
 
-__all__ = ["CalibrationMap", "NONPARAMETRIC"]
+__all__ = ["CalibrationMap", "NONPARAMETRIC", "WeightScaleWarning"]
 
 #: ``complexity`` of maps whose number of free parameters grows with the data.
 NONPARAMETRIC = 1e9
+
+
+class WeightScaleWarning(UserWarning):
+    """Weights summing to less than the number of rows met a count-based statistic.
+
+    Raised by maps whose fit uses counts (smoothed targets, pseudo-counts, a prior worth a
+    number of rows, a Venn-Abers test point of weight one) when ``sample_weight`` cannot be row
+    frequencies because it sums to less than the number of rows it weights. The weights are
+    then rescaled to sum to Kish's effective sample size (see :func:`count_weights`).
+    """
+
+
+def count_weights(w: np.ndarray) -> tuple[np.ndarray, bool]:
+    """Weights on the row-count scale used by count-based statistics.
+
+    ``sample_weight`` means row frequencies: a row of weight 2 counts as two identical rows, so
+    the weights are kept as they are when they sum to at least the number of rows of positive
+    weight. Weights that sum to less (normalised weights summing to 1, or frequencies scaled by
+    1e-3) cannot be frequencies; they are rescaled so that their total equals Kish's (1965)
+    effective sample size ``(sum w)**2 / sum w**2``. Equal weights then become 1 each, and the
+    result does not depend on the scale of the weights.
+
+    Returns ``(weights, rescaled)``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.calibration._base import count_weights
+    >>> count_weights(np.full(4, 0.25))[0]
+    array([1., 1., 1., 1.])
+    >>> count_weights(np.array([2.0, 1.0, 1.0]))[1]
+    False
+    """
+    total = float(w.sum())
+    n_rows = int(np.count_nonzero(w))
+    if total >= n_rows or total <= 0.0:
+        return w, False
+    # scale first so that the sum of squares cannot underflow for tiny weights
+    u = w / w.max()
+    return u * (u.sum() / (u @ u)), True
+
+
+def rule_of_succession_targets(y: np.ndarray, w: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Smoothed targets: the true class ``(N_y + 1) / (N_y + k)``, every other ``1 / (N_y + k)``.
+
+    ``N_y`` is the total weight of the rows of class ``y``. For ``k = 2`` these are Platt's
+    (1999) targets ``(N+ + 1) / (N+ + 2)`` and ``1 / (N- + 2)``; for ``k`` classes, Laplace's
+    rule of succession under a uniform Dirichlet prior. Returns per-row arrays
+    ``(target of the true class, target of each other class)``.
+    """
+    counts = np.bincount(y.astype(np.intp), weights=w, minlength=k)[y.astype(np.intp)]
+    return (counts + 1.0) / (counts + k), 1.0 / (counts + k)
 
 
 class CalibrationMap(BaseEstimator):
@@ -34,6 +87,12 @@ class CalibrationMap(BaseEstimator):
     class indices for multiclass ones; ``w`` the weights, never all zero) and
     ``_predict(scores)``; the base class validates inputs, stores ``classes_`` and
     ``n_classes_`` and makes the outputs finite.
+
+    Regularised fits store ``floor_``: outputs are kept within ``[floor_, 1 - floor_]``
+    (multiclass: every probability at least ``floor_`` before the rows are renormalised).
+    ``boundary_`` is ``None`` or a short text saying that the fit reached a boundary of its
+    parameter space (a search-range end, or a step fitted to classes the scores separate);
+    ``CalibrationWrapper(method="auto")`` does not choose such fits.
     """
 
     #: whether the map accepts (n, k) scores with k > 2
@@ -68,6 +127,18 @@ class CalibrationMap(BaseEstimator):
             raise ValueError("`y` contains NaN; labels must be known for every row.")
         check_same_length(("scores", s), ("y", y))
         w = check_sample_weight(sample_weight, s.shape[0])
+        if self._uses_counts():
+            w, rescaled = count_weights(w)
+            if rescaled:
+                warnings.warn(
+                    f"{type(self).__name__}: `sample_weight` sums to less than the number of "
+                    "rows, so the weights cannot be row frequencies; they are rescaled to sum to "
+                    f"Kish's effective sample size ({w.sum():.4g}) for the map's counts.",
+                    WeightScaleWarning,
+                    stacklevel=2,
+                )
+        self.boundary_ = None
+        self.floor_ = 0.0
         if s.ndim == 1:
             y01, classes = check_binary_labels(y, name="y")
             self.classes_ = classes
@@ -103,10 +174,24 @@ class CalibrationMap(BaseEstimator):
         check_is_fitted(self, "classes_")
         s = self._check_scores(scores, fitting=False)
         out = np.asarray(self._predict(s), dtype=float)
+        floor = float(getattr(self, "floor_", 0.0))
         if out.ndim == 1:
-            return np.clip(out, 0.0, 1.0)
-        out = np.clip(out, 0.0, None)
+            return np.clip(out, floor, 1.0 - floor)
+        out = np.clip(out, floor, None)
         return out / out.sum(axis=1, keepdims=True)
+
+    def _uses_counts(self) -> bool:
+        """Whether the fit uses counts (and so needs weights on the row-count scale)."""
+        return False
+
+    def _set_floor(self, w: np.ndarray, k: int) -> None:
+        """Output floor ``1 / (n + k)``: n the total weight (rows), k the number of classes.
+
+        Laplace's rule of succession: after ``n`` rows none of which fell in a class, its
+        probability is estimated as ``1 / (n + k)``; a calibration set of ``n`` rows supports no
+        probability more extreme than that.
+        """
+        self.floor_ = float(1.0 / (float(w.sum()) + k))
 
     # -- helpers ---------------------------------------------------------------------------
     def _check_scores(self, scores: Any, *, fitting: bool) -> np.ndarray:

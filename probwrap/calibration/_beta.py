@@ -8,7 +8,7 @@ import numpy as np
 from scipy.special import expit, log_expit
 
 from ._base import CalibrationMap
-from ._platt import _logistic_loss, _separated, _weighted_logistic
+from ._platt import _logistic_loss, _separated, _weighted_logistic, smoothed_binary_targets
 
 __all__ = ["BetaMap"]
 
@@ -35,10 +35,25 @@ class BetaMap(CalibrationMap):
     feature whose coefficient came out negative) whenever that rule yields a feasible point
     that is optimal, and is never worse.
 
+    With ``smooth_targets=True`` (the default) the labels are replaced by Platt's (1999)
+    smoothed targets, as for :class:`PlattMap`, and the output is kept within
+    ``[floor_, 1 - floor_]``, ``floor_ = 1 / (N + 2)``. When the scores separate the classes the
+    likelihood is maximised by a (near-)step; the map warns and records ``boundary_``.
+
+    Parameters
+    ----------
+    smooth_targets : bool, default=True
+        Fit Platt's smoothed targets instead of the raw 0/1 labels (and floor the output);
+        ``False`` gives the plain constrained maximum-likelihood fit of the paper.
+
     Attributes
     ----------
     a_, b_, c_ : float
         Fitted parameters.
+    floor_ : float
+        Smallest output (0 without smoothing).
+    boundary_ : str or None
+        Set when the scores separate the classes.
     classes_ : ndarray of shape (2,)
         The labels; the second one is the positive class.
 
@@ -62,18 +77,28 @@ class BetaMap(CalibrationMap):
 
     complexity = 3.0
 
-    def __init__(self) -> None:
-        pass
+    def __init__(self, *, smooth_targets: bool = True) -> None:
+        self.smooth_targets = smooth_targets
+
+    def _uses_counts(self) -> bool:
+        return bool(self.smooth_targets)
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
+        if not isinstance(self.smooth_targets, (bool, np.bool_)):
+            raise ValueError(f"`smooth_targets` must be True or False; got {self.smooth_targets!r}.")
         X = _beta_features(scores)
         if _separated(scores, y, w):
+            self.boundary_ = "scores separate the classes: the beta fit is a near-step"
             warnings.warn(
                 "`scores` separate the two classes perfectly, so the maximum-likelihood beta map "
-                "is a step; BetaMap keeps large finite coefficients.",
+                "is a step; BetaMap keeps large finite coefficients (smoothed targets bound the "
+                "fitted values, not the map beyond the data). Prefer PlattMap here.",
                 UserWarning,
                 stacklevel=3,
             )
+        if self.smooth_targets:
+            y = smoothed_binary_targets(y, w)
+            self._set_floor(w, 2)
         wn = w / w.sum()
         best: tuple[float, float, float] | None = None
         best_loss = np.inf

@@ -50,6 +50,8 @@ class BinningMap(CalibrationMap):
         Total training weight in each bin.
     n_bins_used_ : int
         Number of non-empty bins.
+    floor_ : float
+        Smallest output (0 when ``prior_strength=0``).
     classes_ : ndarray of shape (2,)
         The labels; the second one is the positive class.
 
@@ -97,8 +99,13 @@ class BinningMap(CalibrationMap):
                 f"`prior_strength` must be a finite number >= 0; got {self.prior_strength!r}."
             )
 
+    def _uses_counts(self) -> bool:
+        return bool(self.prior_strength != 0)
+
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         self._check_params()
+        if self.prior_strength > 0:
+            self._set_floor(w, 2)
         distinct, weight, label_sum = _pool_ties(scores, y, w)
         total = weight.sum()
         before = np.cumsum(weight) - weight

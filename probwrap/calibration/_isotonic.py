@@ -6,6 +6,7 @@ import numpy as np
 from scipy.optimize import isotonic_regression
 
 from ._base import NONPARAMETRIC, CalibrationMap
+from ._platt import _separated
 
 __all__ = ["IsotonicMap"]
 
@@ -65,12 +66,30 @@ class IsotonicMap(CalibrationMap):
     smallest or above the largest training score get the first or last fitted value (clamped;
     no extrapolation).
 
+    With ``smooth_targets=True`` (the default) the pooling runs on Platt's (1999) smoothed
+    targets instead of the 0/1 labels: ``(N+ + 1) / (N+ + 2)`` for positives and
+    ``1 / (N- + 2)`` for negatives (``N+``, ``N-`` the weighted class counts). Every fitted
+    level is a weighted mean of these targets, so it lies in
+    ``[1 / (N- + 2), (N+ + 1) / (N+ + 2)]``: never exactly 0 or 1, and within about ``1/N`` of
+    the plain fit on large sets. This equals scikit-learn's ``IsotonicRegression`` fitted to the
+    smoothed targets. When the scores separate the classes the plain fit is a 0/1 step; the map
+    then records ``boundary_`` (``CalibrationWrapper(method="auto")`` does not choose it).
+
+    Parameters
+    ----------
+    smooth_targets : bool, default=True
+        Pool the smoothed targets; ``False`` gives the plain isotonic regression of the labels.
+
     Attributes
     ----------
     thresholds_ : ndarray of shape (m,)
         Distinct training scores (of positive weight), increasing.
     values_ : ndarray of shape (m,)
         Fitted probability at each threshold, non-decreasing.
+    floor_ : float
+        ``1 / (N + 2)`` with smoothing, else 0: outputs stay within ``[floor_, 1 - floor_]``.
+    boundary_ : str or None
+        Set when the scores separate the classes.
     classes_ : ndarray of shape (2,)
         The labels; the second one is the positive class.
 
@@ -85,20 +104,40 @@ class IsotonicMap(CalibrationMap):
     --------
     >>> import numpy as np
     >>> from probwrap.calibration import IsotonicMap
-    >>> m = IsotonicMap().fit([-1.0, 0.0, 1.0, 2.0], [0, 1, 0, 1])
+    >>> m = IsotonicMap(smooth_targets=False).fit([-1.0, 0.0, 1.0, 2.0], [0, 1, 0, 1])
     >>> m.values_
     array([0. , 0.5, 0.5, 1. ])
     >>> m.predict([-5.0, 1.5, 9.0])
     array([0.  , 0.75, 1.  ])
+
+    Smoothed (the default), with two rows per class: targets 1/4 and 3/4 instead of 0 and 1.
+
+    >>> IsotonicMap().fit([-1.0, 0.0, 1.0, 2.0], [0, 1, 0, 1]).values_
+    array([0.25, 0.5 , 0.5 , 0.75])
     """
 
     complexity = NONPARAMETRIC
 
-    def __init__(self) -> None:
-        pass
+    def __init__(self, *, smooth_targets: bool = True) -> None:
+        self.smooth_targets = smooth_targets
+
+    def _uses_counts(self) -> bool:
+        return bool(self.smooth_targets)
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
+        if not isinstance(self.smooth_targets, (bool, np.bool_)):
+            raise ValueError(f"`smooth_targets` must be True or False; got {self.smooth_targets!r}.")
         distinct, weight, label_sum = _pool_ties(scores, y, w, unit_weight_as_none=True)
+        if _separated(scores, y, w):
+            self.boundary_ = "scores separate the classes: the plain fit is a 0/1 step"
+        if self.smooth_targets:
+            # pooled target sums: each row's target is t- plus (t+ - t-) for a positive
+            n_pos = float(w @ y)
+            n_neg = float(w.sum()) - n_pos
+            t_neg, t_pos = 1.0 / (n_neg + 2.0), (n_pos + 1.0) / (n_pos + 2.0)
+            group_weight = np.ones(distinct.shape[0]) if weight is None else weight
+            label_sum = t_neg * group_weight + (t_pos - t_neg) * label_sum
+            self._set_floor(w, 2)
         self.thresholds_ = distinct
         # The pooling pass itself is SciPy's compiled weighted PAV (scipy.optimize, since 1.12):
         # one O(m) pass over the m distinct scores, an order of magnitude faster than a Python

@@ -8,7 +8,7 @@ import numpy as np
 from scipy.special import expit
 from sklearn.exceptions import ConvergenceWarning
 
-from ._base import CalibrationMap
+from ._base import CalibrationMap, rule_of_succession_targets
 
 __all__ = ["PlattMap"]
 
@@ -79,9 +79,17 @@ def _separated(s: np.ndarray, y: np.ndarray, w: np.ndarray) -> bool:
     """
     pos = s[(y == 1) & (w > 0)]
     neg = s[(y == 0) & (w > 0)]
+    if pos.size == 0 or neg.size == 0:
+        return False
     up = neg.max() <= pos.min() and pos.max() > neg.min()
     down = pos.max() <= neg.min() and neg.max() > pos.min()
     return bool(up or down)
+
+
+def smoothed_binary_targets(y: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """Platt's (1999) targets: ``(N+ + 1) / (N+ + 2)`` for positives, ``1 / (N- + 2)`` else."""
+    true, other = rule_of_succession_targets(y, w, 2)
+    return np.where(y == 1, true, other)
 
 
 class PlattMap(CalibrationMap):
@@ -90,12 +98,14 @@ class PlattMap(CalibrationMap):
     The slope and intercept maximise the weighted Bernoulli log-likelihood (Platt 1999). With
     ``smooth_targets=True`` (Platt's recommendation against over-fitting) the 0/1 labels are
     replaced by the targets ``t+ = (N+ + 1) / (N+ + 2)`` for positives and ``t- = 1 / (N- + 2)``
-    for negatives, where ``N+`` and ``N-`` are the weighted class counts.
+    for negatives, where ``N+`` and ``N-`` are the weighted class counts, and the output is kept
+    within ``[floor_, 1 - floor_]`` with ``floor_ = 1 / (N + 2)`` (``N`` the total weight).
 
     Parameters
     ----------
     smooth_targets : bool, default=True
-        Use Platt's smoothed targets instead of the raw 0/1 labels.
+        Use Platt's smoothed targets instead of the raw 0/1 labels (and floor the output);
+        ``False`` gives the plain maximum-likelihood fit.
 
     Attributes
     ----------
@@ -103,6 +113,10 @@ class PlattMap(CalibrationMap):
         Coefficient of the log-odds.
     intercept_ : float
         Constant term.
+    floor_ : float
+        Smallest output (0 without smoothing).
+    boundary_ : str or None
+        Set when raw 0/1 targets meet scores that separate the classes (no finite fit).
     classes_ : ndarray of shape (2,)
         The labels; the second one is the positive class.
 
@@ -149,12 +163,12 @@ class PlattMap(CalibrationMap):
                 stacklevel=3,
             )
         if self.smooth_targets:
-            n_pos = float(w @ y)
-            n_neg = float(w @ (1.0 - y))
-            t = np.where(y == 1, (n_pos + 1.0) / (n_pos + 2.0), 1.0 / (n_neg + 2.0))
+            t = smoothed_binary_targets(y, w)
+            self._set_floor(w, 2)
         else:
             t = y
             if _separated(scores, y, w):
+                self.boundary_ = "scores separate the classes and the targets are raw 0/1"
                 warnings.warn(
                     "`scores` separate the two classes perfectly, so the maximum-likelihood slope "
                     "is infinite; PlattMap keeps a large finite slope. Use smooth_targets=True "
@@ -171,6 +185,9 @@ class PlattMap(CalibrationMap):
             )
         self.slope_ = float(coef[0])
         self.intercept_ = float(intercept)
+
+    def _uses_counts(self) -> bool:
+        return bool(self.smooth_targets)
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
         return expit(self.slope_ * scores + self.intercept_)

@@ -78,17 +78,38 @@ _ORDER_TOL = 1e-12
 
 #: method name -> (map class, constructor settings, fitted attributes with their kind).
 #: Kinds: "float" (a finite number), "int", "array" (a 1-d list of finite numbers), "matrix"
-#: (a 2-d list of lists of finite numbers).
+#: (a 2-d list of lists of finite numbers), "floor" (the output floor of a regularised map: a
+#: number in [0, 0.5); 0 when absent, as written before maps had floors).
 _SPECS: dict[str, tuple[type[CalibrationMap], tuple[str, ...], dict[str, str]]] = {
-    "temperature": (TemperatureMap, (), {"temperature_": "float"}),
-    "platt": (PlattMap, ("smooth_targets",), {"slope_": "float", "intercept_": "float"}),
-    "beta": (BetaMap, (), {"a_": "float", "b_": "float", "c_": "float"}),
+    "temperature": (
+        TemperatureMap, ("smooth_targets",), {"temperature_": "float", "floor_": "floor"}
+    ),
+    "platt": (
+        PlattMap,
+        ("smooth_targets",),
+        {"slope_": "float", "intercept_": "float", "floor_": "floor"},
+    ),
+    "beta": (
+        BetaMap,
+        ("smooth_targets",),
+        {"a_": "float", "b_": "float", "c_": "float", "floor_": "floor"},
+    ),
     "binning": (
         BinningMap,
         ("n_bins", "prior_strength"),
-        {"edges_": "array", "values_": "array", "bin_weights_": "array", "n_bins_used_": "int"},
+        {
+            "edges_": "array",
+            "values_": "array",
+            "bin_weights_": "array",
+            "n_bins_used_": "int",
+            "floor_": "floor",
+        },
     ),
-    "isotonic": (IsotonicMap, (), {"thresholds_": "array", "values_": "array"}),
+    "isotonic": (
+        IsotonicMap,
+        ("smooth_targets",),
+        {"thresholds_": "array", "values_": "array", "floor_": "floor"},
+    ),
     "venn_abers": (
         VennAbersMap,
         (),
@@ -231,7 +252,7 @@ def map_to_dict(
     >>> m = PlattMap().fit([-2.0, -1.0, 0.0, 1.0, 2.0, 3.0], [0, 0, 1, 0, 1, 1])
     >>> d = map_to_dict(m, score_scale="log-odds", note="demo")
     >>> d["method"], d["score_scale"], sorted(d["fitted"])
-    ('platt', 'log-odds', ['intercept_', 'slope_'])
+    ('platt', 'log-odds', ['floor_', 'intercept_', 'slope_'])
     >>> again = map_from_dict(json.loads(json.dumps(d)))
     >>> bool((again.predict([0.5, 4.0]) == m.predict([0.5, 4.0])).all())
     True
@@ -251,7 +272,7 @@ def map_to_dict(
 
     fitted: dict[str, Any] = {}
     for attr, kind in fitted_kinds.items():
-        value = getattr(cal_map, attr)
+        value = getattr(cal_map, attr, 0.0) if kind == "floor" else getattr(cal_map, attr)
         if kind == "array":
             arr = np.asarray(value, dtype=float)
             if arr.ndim != 1 or not np.all(np.isfinite(arr)):
@@ -408,7 +429,7 @@ def map_from_dict(
     >>> from probwrap.calibration import IsotonicMap, map_to_dict, map_from_dict
     >>> m = IsotonicMap().fit([-1.0, 0.0, 1.0, 2.0], [0, 1, 0, 1])
     >>> map_from_dict(map_to_dict(m, score_scale="log-odds")).predict([1.5])
-    array([0.75])
+    array([0.625])
     """
     if not isinstance(description, Mapping):
         raise ValueError(
@@ -454,6 +475,9 @@ def map_from_dict(
     cal_map = cls(**{name: settings[name] for name in setting_names if name in settings})
     _check_settings(method, cal_map)
     for attr, kind in fitted_kinds.items():
+        if kind == "floor" and attr not in fitted:
+            setattr(cal_map, attr, 0.0)
+            continue
         value = _need(fitted, attr, "fitted.")
         if kind == "array":
             setattr(cal_map, attr, _numbers(value, f"fitted.{attr}"))
@@ -470,6 +494,8 @@ def map_from_dict(
             raise ValueError(f"field 'fitted.{attr}' must be a number; got {_short(value)}.")
         if not math.isfinite(float(value)):
             raise ValueError(f"field 'fitted.{attr}' must hold finite numbers.")
+        if kind == "floor" and not 0.0 <= float(value) < 0.5:
+            raise ValueError(f"field 'fitted.{attr}' must be in [0, 0.5); got {_short(value)}.")
         setattr(cal_map, attr, float(value))
     kinds = {"int": np.int64, "float": float, "bool": bool, "str": str}
     kind_types = {
@@ -514,7 +540,9 @@ def map_from_dict(
 
 def _check_settings(method: str, m: Any) -> None:
     """Constructor settings as the map's own fit would accept them."""
-    if method == "platt" and not isinstance(m.smooth_targets, bool):
+    if method in ("platt", "beta", "temperature", "isotonic") and not isinstance(
+        m.smooth_targets, bool
+    ):
         raise ValueError(
             f"field 'settings.smooth_targets' must be true or false; got {m.smooth_targets!r}."
         )

@@ -16,20 +16,52 @@ __all__ = ["TemperatureMap"]
 _LOG_SPAN = 16.0
 
 
-def _loss_slope(log_beta: float, scores: np.ndarray, y: np.ndarray, wn: np.ndarray) -> float:
+def _target_scores(scores: np.ndarray, y: np.ndarray, counts: np.ndarray | None) -> np.ndarray:
+    """Per row, the score expected under the targets: ``sum_j t_ij z_ij``.
+
+    Raw labels: ``z_iy``. Smoothed targets (``counts`` = weighted class counts ``N_c``): the
+    true class gets Platt's ``(N_y + 1) / (N_y + 2)``, the other ``k - 1`` classes share
+    ``1 / (N_y + 2)`` equally. Binary log-odds: the target probability of the positive class
+    times ``s``.
+    """
+    idx = y.astype(np.intp)
+    if scores.ndim == 1:
+        if counts is None:
+            return scores * y
+        n = counts[idx]
+        t = np.where(idx == 1, (n + 1.0) / (n + 2.0), 1.0 / (n + 2.0))
+        return scores * t
+    own = scores[np.arange(scores.shape[0]), idx]
+    if counts is None:
+        return own
+    k = scores.shape[1]
+    n = counts[idx]
+    rest = (scores.sum(axis=1) - own) / (k - 1)
+    return ((n + 1.0) * own + rest) / (n + 2.0)
+
+
+def _loss_slope(
+    log_beta: float,
+    scores: np.ndarray,
+    y: np.ndarray,
+    wn: np.ndarray,
+    counts: np.ndarray | None = None,
+) -> float:
     """Derivative of the weighted mean log loss with respect to the inverse temperature.
 
     With ``beta = 1 / T`` the loss is convex in ``beta`` (a log-sum-exp of linear functions),
     so this derivative is non-decreasing in ``beta`` and the best temperature is its root.
-    Binary: ``sum wn * s * (sigmoid(beta * s) - y)``; multiclass: ``sum wn * (E_q[z] - z_y)``
-    with ``q = softmax(beta * z)``.
+    Binary: ``sum wn * s * (sigmoid(beta * s) - t)``; multiclass: ``sum wn * (E_q[z] - E_t[z])``
+    with ``q = softmax(beta * z)`` and ``t`` the targets (one-hot labels, or the smoothed
+    targets when ``counts``, the weighted class counts, are given).
     """
     beta = np.exp(log_beta)
+    target = _target_scores(scores, y, counts)
     if scores.ndim == 1:
-        return float(wn @ (scores * (expit(beta * scores) - y)))
+        return float(wn @ (scores * expit(beta * scores) - target))
     q = softmax(beta * scores, axis=1)
     expected = np.sum(q * scores, axis=1)
-    return float(wn @ (expected - scores[np.arange(scores.shape[0]), y.astype(np.intp)]))
+    return float(wn @ (expected - target))
 
 
 class TemperatureMap(CalibrationMap):
@@ -40,17 +72,33 @@ class TemperatureMap(CalibrationMap):
     ``T > 1`` softens over-confident scores, ``T < 1`` sharpens them; the order of the scores
     (and so the arg-max class) never changes.
 
-    ``T`` minimises the weighted log loss. The loss is convex in ``1 / T``, so the minimum is
+    ``T`` minimises the weighted log loss, by default against smoothed targets: the true class
+    gets Platt's (1999) ``(N_y + 1) / (N_y + 2)`` and the other ``k - 1`` classes share the
+    remaining ``1 / (N_y + 2)`` equally, where ``N_y`` is the weighted count of the row's class
+    (the true-class target is the one one-vs-rest Platt scaling uses). Smoothing keeps ``T``
+    finite when the scores separate the classes, and outputs are kept at least
+    ``floor_ = 1 / (N + k)`` (``N`` the total weight). The loss is convex in ``1 / T``, so the minimum is
     unique and is the root of the loss's derivative with respect to ``1 / T``; the root is found
     on ``log T`` by Brent's method (SciPy ``brentq``, tolerance 1e-14), which stays precise
     even where the loss itself is flat. The search covers ``exp(+-16)`` times the
     root-mean-square score; when the best ``T`` lies beyond an end (scores unrelated to or
-    against the labels, or classes separated perfectly) the map warns and uses that end.
+    against the labels, or raw labels separated perfectly) the map warns, uses that end and
+    records ``boundary_``.
+
+    Parameters
+    ----------
+    smooth_targets : bool, default=True
+        Fit the smoothed targets (and floor the output); ``False`` fits the raw labels, as in
+        Guo et al. (2017).
 
     Attributes
     ----------
     temperature_ : float
         Fitted temperature ``T``.
+    floor_ : float
+        Smallest output probability (0 without smoothing).
+    boundary_ : str or None
+        Set when the best temperature lies at an end of the search range.
     classes_ : ndarray
         The labels, in column order.
 
@@ -64,7 +112,7 @@ class TemperatureMap(CalibrationMap):
     >>> import numpy as np
     >>> from probwrap.calibration import TemperatureMap
     >>> z = np.array([[4.0, 0.0, 0.0], [0.0, 4.0, 0.0], [0.0, 0.0, 4.0], [4.0, 0.0, 0.0]])
-    >>> m = TemperatureMap().fit(z, [0, 1, 2, 1])
+    >>> m = TemperatureMap(smooth_targets=False).fit(z, [0, 1, 2, 1])
     >>> round(m.temperature_, 4)
     2.2324
 
@@ -72,15 +120,31 @@ class TemperatureMap(CalibrationMap):
 
     >>> m.predict(z[:1]).round(3)
     array([[0.75 , 0.125, 0.125]])
+
+    Smoothed (the default), the targets on the top-scored class are 2/3, 3/4, 2/3 and 1/8 (the
+    last row is wrong); the best confidence is their mean, 53/96: four rows support no more.
+
+    >>> TemperatureMap().fit(z, [0, 1, 2, 1]).predict(z[:1]).round(3)
+    array([[0.552, 0.224, 0.224]])
     """
 
     supports_multiclass = True
     complexity = 1.0
 
-    def __init__(self) -> None:
-        pass
+    def __init__(self, *, smooth_targets: bool = True) -> None:
+        self.smooth_targets = smooth_targets
+
+    def _uses_counts(self) -> bool:
+        return bool(self.smooth_targets)
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
+        if not isinstance(self.smooth_targets, (bool, np.bool_)):
+            raise ValueError(f"`smooth_targets` must be True or False; got {self.smooth_targets!r}.")
+        k = 2 if scores.ndim == 1 else scores.shape[1]
+        counts = None
+        if self.smooth_targets:
+            counts = np.bincount(y.astype(np.intp), weights=w, minlength=k).astype(float)
+            self._set_floor(w, k)
         wn = w / w.sum()
         if scores.ndim == 1:
             square = scores**2
@@ -93,12 +157,14 @@ class TemperatureMap(CalibrationMap):
             return
         # search log(beta) = -log(T) within exp(+-_LOG_SPAN) of 1 / scale
         lo, hi = -np.log(scale) - _LOG_SPAN, -np.log(scale) + _LOG_SPAN
-        args = (scores, y, wn)
+        args = (scores, y, wn, counts)
         at_end = False
         if _loss_slope(lo, *args) >= 0:
             log_beta, at_end = lo, True  # scores unrelated to (or against) the labels
+            self.boundary_ = "temperature at the high end of its search range (flat output)"
         elif _loss_slope(hi, *args) <= 0:
             log_beta, at_end = hi, True  # classes separated perfectly
+            self.boundary_ = "temperature at the low end of its search range (sharpest output)"
         else:
             log_beta = brentq(_loss_slope, lo, hi, args=args, xtol=1e-14, rtol=1e-15)
         log_t = -float(log_beta)

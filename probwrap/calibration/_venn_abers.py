@@ -124,7 +124,9 @@ class VennAbersMap(CalibrationMap):
     ``sample_weight``); a test score equal to a calibration score joins that tie group.
     ``p0 <= p1``, and the width ``p1 - p0`` shows how much the calibration data pin the
     probability down. ``predict`` merges the pair into one probability,
-    ``p1 / (1 - p0 + p1)``, the paper's merge for log loss.
+    ``p1 / (1 - p0 + p1)``, the paper's merge for log loss. The merged value is never exactly 0
+    or 1: below all calibration scores ``p0 = 0`` and ``p1 >= 1 / (N + 1)``, so the merge is at
+    least ``1 / (N + 2)`` (``N`` the total weight), the floor the other maps apply explicitly.
 
     Efficiency: nothing is refitted per test point. After one sort, the values for every
     possible insertion (at each distinct calibration score and in each gap between two) are
@@ -164,6 +166,9 @@ class VennAbersMap(CalibrationMap):
 
     def __init__(self) -> None:
         pass
+
+    def _uses_counts(self) -> bool:
+        return True  # the test point weighs one row
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         distinct, weight, label_sum = _pool_ties(scores, y, w)

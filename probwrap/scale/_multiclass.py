@@ -338,11 +338,16 @@ def _wrapper_scores_block(owner, template, Xb, yb, wb):
     )
 
 
-def _temperature_terms(block, log_beta, total):
+def _temperature_terms(block, log_beta, total, counts=None):
     from ..calibration._temperature import _loss_slope
 
     s, y, w = block
-    return np.array([_loss_slope(log_beta, s, y, w / total)])
+    return np.array([_loss_slope(log_beta, s, y, w / total, counts)])
+
+
+def _class_weight_terms(block, k):
+    _, y, w = block
+    return np.bincount(y, weights=w, minlength=k).astype(float)
 
 
 def _square_terms(block):
@@ -411,9 +416,14 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
                 cal.temperature_ = 1.0
                 return cal
             lo, hi = -np.log(scale) - _LOG_SPAN, -np.log(scale) + _LOG_SPAN
+            counts = None
+            if template.smooth_targets:
+                # smoothed targets need the weighted class counts (see TemperatureMap)
+                counts = _reduce(dask, _class_weight_terms, parts, k)
+                cal.floor_ = float(1.0 / (total + k))
 
             def slope(log_beta: float) -> float:
-                return float(_reduce(dask, _temperature_terms, parts, log_beta, total)[0])
+                return float(_reduce(dask, _temperature_terms, parts, log_beta, total, counts)[0])
 
             if slope(lo) >= 0 or slope(hi) <= 0:
                 log_beta = lo if slope(lo) >= 0 else hi

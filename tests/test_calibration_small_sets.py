@@ -1,0 +1,252 @@
+"""Calibration on small and awkward held-out sets: no exact 0/1, no runaway fits, graceful auto.
+
+One test per failure seen on open data (scikit-learn's bundled wine and breast cancer sets):
+a separable 3-class set of 44 rows, a rank-separated binary set of 142 rows, a random forest with
+exact 0/1 outputs, a single positive, and weights whose scale must not change the choice.
+scikit-learn's CalibratedClassifierCV on the same frozen model and rows is the outside
+reference for the log losses.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+from sklearn.calibration import CalibratedClassifierCV
+from sklearn.datasets import load_breast_cancer, load_wine
+from sklearn.ensemble import RandomForestClassifier
+from sklearn.frozen import FrozenEstimator
+from sklearn.linear_model import LogisticRegression
+from sklearn.metrics import log_loss
+from sklearn.model_selection import train_test_split
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+
+from probwrap import CalibrationWrapper
+from probwrap.calibration import (
+    BetaMap,
+    BinningMap,
+    IsotonicMap,
+    PlattMap,
+    TemperatureMap,
+    VennAbersMap,
+    WeightScaleWarning,
+)
+
+BINARY_MAPS = [PlattMap, BetaMap, TemperatureMap, IsotonicMap, BinningMap, VennAbersMap]
+METHODS = ["platt", "beta", "temperature", "isotonic", "binning", "venn_abers"]
+
+
+def _sklearn_loss(base, X_cal, y_cal, X_te, y_te, method):
+    ref = CalibratedClassifierCV(FrozenEstimator(base), method=method).fit(X_cal, y_cal)
+    return log_loss(y_te, ref.predict_proba(X_te), labels=np.unique(y_cal))
+
+
+# --------------------------------------------------------------------------- properties
+@pytest.mark.parametrize("cls", BINARY_MAPS)
+@pytest.mark.parametrize("n", [2, 3, 5, 12])
+def test_binary_maps_stay_strictly_inside_zero_one_on_separated_tiny_sets(cls, n):
+    # n negatives below n positives: every map's output stays within its documented floor,
+    # 1 / (N + 2) (Laplace's rule of succession for N rows), also far outside the data
+    s = np.r_[np.linspace(-3, -1, n), np.linspace(1, 3, n)]
+    y = np.r_[np.zeros(n), np.ones(n)]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)  # beta warns about the separation
+        m = cls().fit(s, y)
+    out = m.predict(np.r_[-1e6, -50.0, s, 50.0, 1e6])
+    floor = 1.0 / (2 * n + 2)
+    assert np.all(out >= floor * (1 - 1e-12)) and np.all(out <= 1 - floor * (1 - 1e-12))
+    if cls is not VennAbersMap:  # Venn-Abers meets the bound by construction
+        assert m.floor_ == pytest.approx(floor)
+
+
+@pytest.mark.parametrize("n_per_class", [1, 2, 6])
+def test_temperature_multiclass_stays_inside_zero_one_on_separated_tiny_sets(n_per_class):
+    k = 4
+    y = np.repeat(np.arange(k), n_per_class)
+    z = 30.0 * np.eye(k)[y]  # the true class scores far above the rest: separated
+    m = TemperatureMap().fit(z, y)
+    assert m.boundary_ is None and np.isfinite(m.temperature_)
+    out = m.predict(np.vstack([z, 1e4 * np.eye(k)]))
+    assert out.min() >= m.floor_ / (1 + k * m.floor_) and m.floor_ == pytest.approx(1 / (k * n_per_class + k))
+    assert out.max() < 1.0
+
+
+@pytest.mark.parametrize("method", METHODS)
+def test_wrapper_outputs_strictly_inside_zero_one_binary_and_multiclass(method):
+    X, y = load_wine(return_X_y=True)
+    X_tr, X_cal, y_tr, y_cal = train_test_split(X, y, train_size=0.6, random_state=0, stratify=y)
+    base = make_pipeline(StandardScaler(), LogisticRegression(C=100, max_iter=5000)).fit(X_tr, y_tr)
+    far = np.vstack([X, X[:5] * 5, -X[:5] * 5])
+    for yy, cut in ((y_cal, None), ((y_cal == 0).astype(int), 1)):
+        est = base if cut is None else make_pipeline(
+            StandardScaler(), LogisticRegression(C=100, max_iter=5000)
+        ).fit(X_tr, (y_tr == 0).astype(int))
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", UserWarning)
+            model = CalibrationWrapper(FrozenEstimator(est), method=method).fit(X_cal, yy)
+        p = model.predict_proba(far)
+        assert p.min() > 0.0 and p.max() < 1.0, method
+        # no probability more extreme than the rule of succession for the calibration rows
+        # allows (one-vs-rest maps each keep 1 / (N + 2); renormalising can halve it at most
+        # k times over)
+        assert p.min() >= 1.0 / (len(yy) + 2) / len(model.classes_) * (1 - 1e-9)
+
+
+# --------------------------------------------------------------------------- the failures
+@pytest.fixture(scope="module")
+def wine_44():
+    """A 3-class set of 44 calibration rows whose logistic-regression scores separate."""
+    X, y = load_wine(return_X_y=True)
+    X_tr, X_rest, y_tr, y_rest = train_test_split(X, y, train_size=0.4, random_state=2, stratify=y)
+    X_cal, X_te, y_cal, y_te = train_test_split(
+        X_rest, y_rest, train_size=44, random_state=2, stratify=y_rest
+    )
+    base = make_pipeline(StandardScaler(), LogisticRegression(C=10, max_iter=5000)).fit(X_tr, y_tr)
+    return base, X_cal, y_cal, X_te, y_te
+
+
+def test_separable_44_row_three_class_set(wine_44):
+    base, X_cal, y_cal, X_te, y_te = wine_44
+    assert np.all(base.predict(X_cal) == y_cal)  # the scores separate the calibration rows
+    assert np.any(base.predict(X_te) != y_te)  # but not the test rows
+    model = CalibrationWrapper(FrozenEstimator(base), random_state=0).fit(X_cal, y_cal)
+    # fits that ran to a boundary are listed and not chosen
+    assert "not eligible" in model.method_notes_["beta"]
+    assert "not eligible" in model.method_notes_["isotonic"]
+    assert model.method_ not in ("beta", "isotonic")
+    temp = CalibrationWrapper(FrozenEstimator(base), method="temperature").fit(X_cal, y_cal)
+    assert temp.calibrator_.boundary_ is None and temp.calibrator_.temperature_ > 0.1
+    p = model.predict_proba(X_te)
+    assert p.min() >= 1 / (44 + 3) / 3
+    ours = log_loss(y_te, p, labels=model.classes_)
+    # within 15 % of scikit-learn's (regularised) sigmoid calibration on the same rows
+    assert ours <= 1.15 * _sklearn_loss(base, X_cal, y_cal, X_te, y_te, "sigmoid")
+
+
+@pytest.fixture(scope="module")
+def cancer_142():
+    """142 breast-cancer calibration rows that the model's scores rank perfectly."""
+    X, y = load_breast_cancer(return_X_y=True)
+    X_tr, X_rest, y_tr, y_rest = train_test_split(X, y, train_size=0.5, random_state=8, stratify=y)
+    X_cal, X_te, y_cal, y_te = train_test_split(
+        X_rest, y_rest, train_size=142, random_state=8, stratify=y_rest
+    )
+    base = make_pipeline(StandardScaler(), LogisticRegression(max_iter=5000)).fit(X_tr, y_tr)
+    return base, X_cal, y_cal, X_te, y_te
+
+
+def test_rank_separated_binary_set(cancer_142):
+    base, X_cal, y_cal, X_te, y_te = cancer_142
+    s = base.decision_function(X_cal)
+    assert s[y_cal == 0].max() < s[y_cal == 1].min()  # perfectly rank-separated
+    iso = CalibrationWrapper(FrozenEstimator(base), method="isotonic").fit(X_cal, y_cal)
+    n_pos, n_neg = y_cal.sum(), (1 - y_cal).sum()
+    # smoothed isotonic levels: Platt's targets 1 / (N- + 2) and (N+ + 1) / (N+ + 2), not 0/1
+    np.testing.assert_allclose(
+        np.unique(iso.calibrator_.values_), [1 / (n_neg + 2), (n_pos + 1) / (n_pos + 2)]
+    )
+    model = CalibrationWrapper(FrozenEstimator(base), random_state=0).fit(X_cal, y_cal)
+    assert model.method_ != "isotonic" and "not eligible" in model.method_notes_["isotonic"]
+    p = model.predict_proba(X_te)
+    assert p.min() >= 1 / (142 + 2) * (1 - 1e-9)
+    ours = log_loss(y_te, p)
+    # the test rows are not separated: an exact 0/1 step would cost ~34.5 nats on a wrong row
+    assert ours <= 1.15 * _sklearn_loss(base, X_cal, y_cal, X_te, y_te, "sigmoid")
+    assert ours < 0.5 * _sklearn_loss(base, X_cal, y_cal, X_te, y_te, "isotonic")
+
+
+def test_random_forest_with_exact_zero_one_outputs():
+    X, y = load_breast_cancer(return_X_y=True)
+    X_tr, X_rest, y_tr, y_rest = train_test_split(X, y, train_size=0.5, random_state=0, stratify=y)
+    X_cal, X_te, y_cal, y_te = train_test_split(X_rest, y_rest, train_size=142, random_state=0, stratify=y_rest)
+    forest = RandomForestClassifier(n_estimators=50, random_state=0).fit(X_tr, y_tr)
+    raw = forest.predict_proba(X_cal)
+    assert np.mean((raw == 0) | (raw == 1)) > 0.3
+    losses = {}
+    for method in ("platt", "beta", "temperature"):
+        model = CalibrationWrapper(FrozenEstimator(forest), method=method).fit(X_cal, y_cal)
+        # the forest's resolution is 1/50: clip_ is half the smallest non-zero probability
+        smallest = raw[raw > 0].min()
+        assert smallest == pytest.approx(1 / 50, abs=1e-12)
+        assert model.clip_ == pytest.approx(smallest / 2)
+        p = model.predict_proba(X_te)
+        per_row = -np.log(p[np.arange(len(y_te)), y_te])
+        assert per_row.max() < np.log(144) + 1e-9  # no row costs more than the floor allows
+        losses[method] = log_loss(y_te, p)
+    best_ref = min(_sklearn_loss(forest, X_cal, y_cal, X_te, y_te, m) for m in ("sigmoid", "isotonic"))
+    assert min(losses.values()) <= 1.2 * best_ref
+    auto = CalibrationWrapper(FrozenEstimator(forest), random_state=0).fit(X_cal, y_cal)
+    assert log_loss(y_te, auto.predict_proba(X_te)) <= 1.3 * best_ref
+    # a user-set clip is kept as given
+    assert CalibrationWrapper(FrozenEstimator(forest), method="platt", clip=1e-12).fit(
+        X_cal, y_cal
+    ).clip_ == 1e-12
+
+
+def test_single_positive_falls_back_with_a_warning(cancer_142):
+    base, X_cal, y_cal, X_te, y_te = cancer_142
+    idx = np.r_[np.flatnonzero(y_cal == 1)[:1], np.flatnonzero(y_cal == 0)[:29]]
+    with pytest.warns(UserWarning, match="too few to score candidate maps"):
+        model = CalibrationWrapper(FrozenEstimator(base), random_state=0).fit(X_cal[idx], y_cal[idx])
+    assert model.method_ == "platt" and model.method_scores_ == {}
+    assert "without cross-validation" in model.method_notes_["platt"]
+    p = model.predict_proba(X_te)
+    assert 0 < p.min() and p.max() < 1
+    for method in METHODS:  # every named method works as well
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", UserWarning)
+            CalibrationWrapper(FrozenEstimator(base), method=method).fit(X_cal[idx], y_cal[idx])
+
+
+def test_failing_candidates_are_reported_and_a_named_failing_method_raises(cancer_142):
+    base, X_cal, y_cal, _, _ = cancer_142
+    pos = np.flatnonzero(y_cal == 1)
+    # fold 0 holds every positive, so each candidate's fit on the other folds sees one class
+    rest = np.setdiff1d(np.arange(len(y_cal)), pos)
+    folds = [(rest, pos), (np.r_[pos, rest[::2]], rest[1::2]), (np.r_[pos, rest[1::2]], rest[::2])]
+    with pytest.warns(UserWarning, match="no candidate map could be scored"):
+        model = CalibrationWrapper(FrozenEstimator(base), cv=folds).fit(X_cal, y_cal)
+    assert model.method_ == "platt"
+    assert all("failed in fold" in model.method_notes_[m] for m in METHODS if m != "platt")
+    with pytest.raises(ValueError, match="`n_bins` must be an integer"):
+        CalibrationWrapper(FrozenEstimator(base), method=BinningMap(n_bins=0)).fit(X_cal, y_cal)
+
+
+# --------------------------------------------------------------------------- weights
+def test_weight_scale_does_not_change_the_choice(wine_44):
+    base, X_cal, y_cal, X_te, _ = wine_44
+    w = np.random.default_rng(0).uniform(0.5, 3.0, size=len(y_cal))
+    ref = CalibrationWrapper(FrozenEstimator(base), random_state=0).fit(X_cal, y_cal, sample_weight=w)
+    for scaled in (w * 1e-3, w / w.sum()):
+        with pytest.warns(WeightScaleWarning, match="Kish"):
+            other = CalibrationWrapper(FrozenEstimator(base), random_state=0).fit(
+                X_cal, y_cal, sample_weight=scaled
+            )
+        assert other.method_ == ref.method_
+    # the rescaled weights are scale-free: 1e-3 and sum-to-one agree exactly
+    a = CalibrationWrapper(FrozenEstimator(base), random_state=0)
+    b = CalibrationWrapper(FrozenEstimator(base), random_state=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", WeightScaleWarning)
+        a.fit(X_cal, y_cal, sample_weight=w * 1e-3)
+        b.fit(X_cal, y_cal, sample_weight=w / w.sum())
+    np.testing.assert_allclose(a.predict_proba(X_te), b.predict_proba(X_te), rtol=1e-9)
+    assert a.method_scores_.keys() == b.method_scores_.keys()
+    for name in a.method_scores_:
+        np.testing.assert_allclose(a.method_scores_[name], b.method_scores_[name], rtol=1e-7)
+
+
+@pytest.mark.parametrize("cls", [PlattMap, IsotonicMap, BetaMap, BinningMap, VennAbersMap, TemperatureMap])
+def test_weights_summing_to_one_do_not_collapse_the_count_based_maps(cls):
+    # equal weights 1/n are not frequencies; rescaled to Kish's n_eff = n they equal the
+    # unweighted fit, instead of pseudo-counts that swamp a total weight of 1
+    X, y = load_breast_cancer(return_X_y=True)
+    s = (14.0 - X[::7, 0]) / 2.0  # a smaller mean radius: more often benign (label 1)
+    y = y[::7]
+    plain = cls().fit(s, y).predict(s)
+    with pytest.warns(WeightScaleWarning):
+        normalised = cls().fit(s, y, sample_weight=np.full(len(y), 1 / len(y))).predict(s)
+    np.testing.assert_allclose(normalised, plain, atol=1e-12)
+    assert plain.max() - plain.min() > 0.5  # far from a collapse to one value
