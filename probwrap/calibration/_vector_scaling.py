@@ -200,11 +200,37 @@ def _fit_linear_softmax(
     if not np.all(np.isfinite(theta)):  # pragma: no cover - the objective is convex and smooth
         raise ValueError(f"{name}: the fit did not give finite parameters.")
     boundary = None
-    if np.max(np.abs(theta)) > _RUNAWAY or objective(theta)[0] < 1e-9:
+    A, b = unpack(theta)
+    separated = False
+    if not smooth:
+        eta = (x @ A.T if full else x * A) + b
+        rows = np.arange(n)
+        true = eta[rows, y]
+        others = eta.copy()
+        others[rows, y] = -np.inf
+        live = w > 0
+        separated = bool(np.all(true[live] > others[live].max(axis=1)))
+    if separated and shrinkage > 0:
+        # every calibration row is ranked first for its own class: only the weak pull keeps
+        # the fit finite and it would be confidently extreme; refit with smoothed targets
+        reason = (
+            "the scores separate the classes (every calibration row is ranked first for its "
+            "own class), so the likelihood has no finite maximum"
+        )
+        warnings.warn(
+            f"{name}: {reason}; refitted with Platt-style smoothed targets, which bound the "
+            "confidence.",
+            UserWarning,
+            stacklevel=4,
+        )
+        A_s, b_s, _ = _fit_linear_softmax(
+            z, y, w, full=full, shrinkage=shrinkage, smooth=True, name=name
+        )
+        return A_s, b_s, reason
+    if separated or np.max(np.abs(theta)) > _RUNAWAY or objective(theta)[0] < 1e-9:
         boundary = (
-            f"the fitted scales or intercepts are very large (up to "
-            f"{np.max(np.abs(theta)):.3g} on standardised scores): the scores separate the "
-            "classes and the likelihood has no finite maximum"
+            "the scores separate the classes and the likelihood has no finite maximum (fitted "
+            f"parameters up to {np.max(np.abs(theta)):.3g} on standardised scores)"
         )
         advice = (
             "Use shrinkage > 0 or smooth_targets=True for a finite fit."
@@ -257,7 +283,11 @@ class VectorScalingMap(CalibrationMap):
     (the model's own probabilities), only keeps the fit finite when the scores separate the
     classes perfectly; otherwise the common scale (the temperature) is set by the data alone,
     as in temperature scaling. Every output probability is kept within [1e-15, 1 - 1e-15]
-    (rows renormalised), so even far outside the fitted scores no class gets exactly 0 or 1. The penalty is worth ``shrinkage`` rows, so it matters on small
+    (rows renormalised), so even far outside the fitted scores no class gets exactly 0 or 1.
+    When the fitted map ranks every calibration row first for its own class (the scores
+    separate the classes, so the likelihood has no finite maximum and only the weak pull would
+    bound the confidence), the map warns, refits with the smoothed targets below and records
+    the reason in ``boundary_`` (``method="auto"`` then leaves it out). The penalty is worth ``shrinkage`` rows, so it matters on small
     calibration sets and vanishes on large ones. Weights count as row frequencies: a weight of
     2 gives what a duplicated row gives, and the penalty is measured against the weight total.
 
@@ -284,8 +314,7 @@ class VectorScalingMap(CalibrationMap):
     intercepts_ : ndarray of shape (k,)
         Per-class intercepts ``b``, centred to sum to zero.
     boundary_ : str or None
-        Why the fit ran off toward infinite parameters (only possible with ``shrinkage=0`` and
-        without smoothed targets), else None.
+        Why the likelihood had no finite maximum (the scores separate the classes), else None.
     classes_ : ndarray
         The labels, in column order.
 
@@ -375,7 +404,8 @@ class MatrixScalingMap(CalibrationMap):
     intercepts_ : ndarray of shape (k,)
         Intercepts ``b``, centred to sum to zero.
     boundary_ : str or None
-        Why the fit ran off toward infinite parameters, else None.
+        Why the likelihood had no finite maximum (the scores separate the classes), else None;
+        as in :class:`VectorScalingMap` the map then refits with smoothed targets.
     classes_ : ndarray
         The labels, in column order.
 
