@@ -136,12 +136,14 @@ def calibrate_and_score(model, X_cal, y_cal, X_te, y_te_index, classes, seed):
     return out, auto.method_, t_auto, t_sk
 
 
-def run_small(quick: bool) -> list[dict]:
+def run_small(quick: bool, part: tuple[int, int] = (0, 1)) -> list[dict]:
     sizes = (40, 100) if quick else (40, 100, 200, 500)
     seeds = (0,) if quick else (0, 1, 2)
     cells: dict[tuple, dict] = {}
     times = np.zeros(2)
-    for name, X, y in small_sets(quick):
+    for i_set, (name, X, y) in enumerate(small_sets(quick)):
+        if i_set % part[1] != part[0]:
+            continue
         classes, y_index = np.unique(y, return_inverse=True)
         for seed in seeds:
             # test rows (at most 2,000), training rows (35 %, at most 2,000), the rest a pool
@@ -293,14 +295,35 @@ def isotonic_speed(quick: bool) -> None:
           f"ratio {t_fit / t_sort:.2f} (target <= 2)")
 
 
+def _option(argv: list[str], name: str) -> str | None:
+    return argv[argv.index(name) + 1] if name in argv else None
+
+
 def main(argv: list[str]) -> None:
+    """Options: --quick, --no-large, --verbose (warnings per cell); --part I/N runs every N-th
+    data set starting at I and --save FILE writes its cells as JSON, so that parts can run in
+    separate processes; --combine FILE [FILE ...] prints the summary of saved parts."""
+    import json
+
     quick = "--quick" in argv
     t0 = time.process_time()
+    if "--combine" in argv:
+        files = argv[argv.index("--combine") + 1:]
+        rows = [r for f in files for r in json.load(open(f, encoding="utf-8"))]
+        report_small(rows)
+        markdown_small(rows)
+        return
     print(f"scikit-learn {sklearn.__version__}; scikit-learn methods: {', '.join(SK_METHODS)}")
-    rows = run_small(quick)
+    part = _option(argv, "--part")
+    i, n = (int(v) for v in part.split("/")) if part else (0, 1)
+    rows = run_small(quick, (i, n))
     report_small(rows, verbose="--verbose" in argv)
     markdown_small(rows)
-    if "--no-large" not in argv:
+    save = _option(argv, "--save")
+    if save:
+        with open(save, "w", encoding="utf-8") as fh:
+            json.dump(rows, fh)
+    if "--no-large" not in argv and i == 0:
         run_large(quick)
         isotonic_speed(quick)
     print(f"\nTotal CPU time: {time.process_time() - t0:.0f} s")
