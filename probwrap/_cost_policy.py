@@ -343,7 +343,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
                 "strategy='bayes' or 'fixed' without a capacity; tuning or fitting a capacity "
                 "on such rows needs them in memory."
             )
-        from .scale._multiclass import first_block_row_costs, heldout_cost_dask
+        from .scale._multiclass_wrappers import first_block_row_costs, heldout_cost_dask
 
         est = self.estimator
         self.estimator_ = est

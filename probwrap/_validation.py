@@ -21,6 +21,8 @@ __all__ = [
     "check_sample_weight",
     "check_same_length",
     "power_of_two_unit",
+    "check_label_types",
+    "plain",
 ]
 
 
@@ -106,6 +108,43 @@ def check_same_length(*pairs: tuple[str, Any]) -> int:
     return n
 
 
+def plain(value: Any) -> Any:
+    """``value`` with NumPy scalars turned into Python ones (recursively in tuples and lists),
+    so that messages show ``nan`` or ``0.5`` rather than ``np.float64(nan)``."""
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, (tuple, list)):
+        return type(value)(plain(v) for v in value)
+    return value
+
+
+def _label_kind(value: Any) -> str:
+    if isinstance(value, (numbers.Number, np.bool_)):
+        return "number"
+    if isinstance(value, str):
+        return "string"
+    return type(value).__name__
+
+
+def check_label_types(arr: np.ndarray, name: str) -> None:
+    """Labels must be all numbers (booleans count) or all strings, so that they can be sorted.
+
+    Only object arrays can mix kinds; a mix makes NumPy's sorting raise a bare ``TypeError``.
+    """
+    if arr.dtype.kind != "O":
+        return
+    kinds = {_label_kind(v) for v in arr.ravel().tolist()}
+    if len(kinds) > 1:
+        raise ValueError(
+            f"`{name}` mixes label types ({', '.join(sorted(kinds))}); labels must be all "
+            "numbers or all strings."
+        )
+    if kinds - {"number", "string"}:
+        raise ValueError(
+            f"`{name}` holds labels of type {kinds.pop()}; labels must be numbers or strings."
+        )
+
+
 def check_labels(y: Any, *, name: str = "y", classes: Any = None, min_classes: int = 2) -> tuple[np.ndarray, np.ndarray]:
     """Encode labels as integer indices.
 
@@ -122,6 +161,7 @@ def check_labels(y: Any, *, name: str = "y", classes: Any = None, min_classes: i
         raise ValueError(f"`{name}` is empty; at least one row is needed.")
     if arr.dtype.kind == "f" and np.isnan(arr).any():
         raise ValueError(f"`{name}` contains NaN; labels must be known for every row.")
+    check_label_types(arr, name)
     if classes is None:
         if arr.dtype.kind in "biuf":
             # Fast path without a sort for numeric labels with at most two distinct values.

@@ -16,7 +16,7 @@ import numpy as np
 from scipy.special import gammaln
 
 from ._validation import check_proba
-from .scale._tally import DEFAULT_RESOLUTION, ScoreTally, tally_scores
+from .scale import DEFAULT_RESOLUTION, ScoreTally, tally_scores
 
 __all__ = ["binomial_log_likelihood", "expand_counts", "rates_to_counts", "tally_counts"]
 

@@ -22,7 +22,7 @@ from sklearn.model_selection import (
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from probwrap import CostPolicyWrapper
+from probwrap import CalibrationWrapper, CostPolicyWrapper
 from probwrap.decision import (
     add_reject_action,
     bayes_actions,
@@ -51,7 +51,7 @@ def cancer():
 def test_bayes_uses_elkan_cutoff(cancer):
     X, y = cancer
     policy = CostPolicyWrapper(_model(), costs=COSTS).fit(X, y)
-    # Elkan (2001) Theorem 1: cutoff 2 / (2 + 35)
+    # Elkan (2001) section 2: cutoff 2 / (2 + 35)
     assert policy.cutoff_ == pytest.approx(2.0 / 37.0, rel=1e-12)
     p = policy.predict_proba(X)[:, 1]
     np.testing.assert_array_equal(policy.predict(X), (p > 2.0 / 37.0).astype(int))
@@ -76,10 +76,30 @@ def test_tuned_pools_out_of_fold_predictions_into_one_curve(cancer):
         realised_cost(y, (oof > policy.cutoff_).astype(int), costs=C2), rel=1e-10
     )
     ci = policy.cutoff_interval_
-    assert ci.fold_cutoffs.shape == (4,)
-    assert ci.low <= ci.high
+    # each fold's cutoff is the exact search on that fold's out-of-fold rows alone
+    for k, (_, test) in enumerate(folds.split(X, y)):
+        ref_k = search_cutoff(oof[test], y[test], C2, score_bounds=(0, 1))
+        assert ci.fold_cutoffs[k] == pytest.approx(ref_k.cutoff, rel=1e-10)
     assert ci.bootstrap_cutoffs.shape == (200,)
+    # consistency: the percentile interval of the resampled cutoffs
+    assert (ci.low, ci.high) == pytest.approx(np.quantile(ci.bootstrap_cutoffs, [0.025, 0.975]),
+                                             rel=1e-12)
     assert policy.cutoff_interval_ is ci  # computed once
+
+
+def test_cutoff_interval_with_zero_weight_rows():
+    # Regression: zero weights are valid (absent rows); a bootstrap resample of only zero-weight
+    # rows used to raise IndexError. Now the interval equals the one without those rows.
+    X, y = make_classification(400, weights=[0.8], random_state=7)
+    inner = FrozenEstimator(LogisticRegression().fit(X[:200], y[:200]))
+    w = np.zeros(200)
+    w[:6] = 1.0
+    policy = CostPolicyWrapper(inner, costs=COSTS, strategy="tuned", random_state=0)
+    policy.fit(X[200:], y[200:], sample_weight=w)
+    ci = policy.cutoff_interval_
+    ref = CostPolicyWrapper(inner, costs=COSTS, strategy="tuned", random_state=0)
+    ref.fit(X[200:206], y[200:206])
+    np.testing.assert_array_equal(ci.bootstrap_cutoffs, ref.cutoff_interval_.bootstrap_cutoffs)
 
 
 def test_frozen_estimator_not_refitted_and_all_rows_heldout():
@@ -182,8 +202,12 @@ def test_per_row_costs_from_X():
     ref = bayes_actions(p, costs(Xv), actions=["ship", "inspect"])
     np.testing.assert_array_equal(policy.predict(Xv), ref)
     assert policy.cost_matrix_ is None
-    # row-specific cutoffs: expensive parcels are inspected at lower probabilities
-    assert np.einsum("nk,nka->na", p, costs(Xv)).shape == policy.expected_costs(Xv).shape
+    # row-specific cutoffs: inspecting costs 2 either way and a missed damage costs the
+    # parcel's value v, so inspect iff 2 < p v, i.e. p > 2 / v (Elkan 2001, section 2, per
+    # row): expensive parcels are inspected at lower probabilities
+    np.testing.assert_array_equal(policy.predict(Xv),
+                                  np.where(p[:, 1] > 2.0 / value, "inspect", "ship"))
+    np.testing.assert_allclose(policy.expected_costs(Xv), np.einsum("nk,nka->na", p, costs(Xv)))
     tuned = CostPolicyWrapper(LogisticRegression(max_iter=500), costs=costs, strategy="tuned",
                               random_state=0).fit(Xv, y)
     assert tuned.class_offsets_.shape == (2,)
@@ -236,9 +260,8 @@ def test_scorer_with_row_costs_through_metadata_routing():
 
 
 def test_composes_with_calibration_wrapper(cancer):
-    calibration = pytest.importorskip("probwrap._calibration_wrapper")
     X, y = cancer
-    inner = calibration.CalibrationWrapper(_model(), method="platt", random_state=0)
+    inner = CalibrationWrapper(_model(), method="platt", random_state=0)
     policy = CostPolicyWrapper(inner, costs=COSTS, strategy="bayes").fit(X, y)
     p = policy.predict_proba(X)
     np.testing.assert_allclose(p, policy.estimator_.predict_proba(X))

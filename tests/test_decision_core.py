@@ -1,4 +1,5 @@
-"""Reference tests of the decision array core; each names its outside source."""
+"""Tests of the decision array core: reference tests name their outside source (a published
+formula, scikit-learn, brute-force enumeration); consistency tests say so."""
 
 from __future__ import annotations
 
@@ -41,7 +42,8 @@ def _direct_cost(scores, y, c0, c1, w, cutoff):
 
 
 def test_plugin_cutoff_matches_elkan_formula():
-    # Elkan (2001), "The foundations of cost-sensitive learning", IJCAI, Theorem 1:
+    # Elkan (2001), "The foundations of cost-sensitive learning", IJCAI, section 2 (the optimal
+    # threshold; his Theorem 1 is the re-weighting rule, not this formula):
     # p* = (c10 - c00) / (c10 - c00 + c01 - c11), c(i, j) = cost of predicting i when j is true.
     c00, c10, c01, c11 = 0.5, 2.5, 35.0, 1.0  # tn, fp, fn, tp
     expected = (c10 - c00) / (c10 - c00 + c01 - c11)
@@ -51,7 +53,7 @@ def test_plugin_cutoff_matches_elkan_formula():
 
 
 def test_bayes_actions_switch_exactly_at_elkan_cutoff():
-    # Elkan (2001) Theorem 1: predicting positive is optimal iff p >= p*; at p = p* both
+    # Elkan (2001) section 2: predicting positive is optimal iff p >= p*; at p = p* both
     # actions cost the same, and the lower column index (negative action) is kept.
     costs = {"fp": 2.0, "fn": 35.0}
     cut = plugin_cutoff(costs)
@@ -361,7 +363,7 @@ def test_multiclass_offsets_never_worse_than_bayes_and_brute_force_small():
 
 
 def test_cutoff_interval_reweighting_equals_explicit_resampling():
-    # Reference: search_cutoff on rows explicitly repeated by the bootstrap counts.
+    # Consistency test: search_cutoff on rows explicitly repeated by the bootstrap counts.
     rng = np.random.default_rng(12)
     p = np.round(rng.uniform(size=300), 2)
     y = (rng.uniform(size=300) < p).astype(int)
@@ -370,15 +372,45 @@ def test_cutoff_interval_reweighting_equals_explicit_resampling():
     draws = np.random.RandomState(0)
     for b in range(5):
         counts = np.bincount(draws.randint(0, 300, size=300), minlength=300)
-        keep = counts > 0
         res = search_cutoff(np.repeat(p, counts), np.repeat(y, counts), costs,
                             score_bounds=(0, 1))
         # same least cost and same decision on the resampled rows
         flagged_ref = np.repeat(p, counts) > res.cutoff
         flagged_got = np.repeat(p, counts) > ci.bootstrap_cutoffs[b]
         np.testing.assert_array_equal(flagged_ref, flagged_got)
-        assert keep.any()
-    assert ci.low <= ci.high
+        assert res.cost == pytest.approx(
+            np.mean(np.where(flagged_got, np.where(y[np.repeat(np.arange(300), counts)] == 1,
+                                                   0.0, 1.0),
+                             np.where(y[np.repeat(np.arange(300), counts)] == 1, 3.0, 0.0))),
+            rel=1e-12)
+    # the interval is the percentile interval of the resampled cutoffs (consistency)
+    assert (ci.low, ci.high) == pytest.approx(np.quantile(ci.bootstrap_cutoffs, [0.025, 0.975]),
+                                             rel=1e-12)
+
+
+def test_cutoff_interval_ignores_zero_weight_rows():
+    # Weights are frequencies: rows of weight zero are absent. Regression: a resample that drew
+    # only zero-weight rows raised IndexError in the optimum search.
+    rng = np.random.default_rng(21)
+    p = np.round(rng.uniform(size=400), 3)
+    y = (rng.uniform(size=400) < p).astype(int)
+    costs = {"fp": 1.0, "fn": 3.0}
+    w = np.zeros(400)
+    w[:5] = 1.0  # five rows present: (395/400)^400 ~ 1e-2 chance per resample of none of them
+    ci = cutoff_interval(p, y, costs, sample_weight=w, n_resamples=300, random_state=0,
+                         score_bounds=(0, 1))
+    same = cutoff_interval(p[:5], y[:5], costs, n_resamples=300, random_state=0,
+                           score_bounds=(0, 1))
+    np.testing.assert_array_equal(ci.bootstrap_cutoffs, same.bootstrap_cutoffs)
+    assert (ci.low, ci.high) == (same.low, same.high)
+    # zero weights scattered among many present rows change nothing either
+    w = np.ones(400)
+    w[::3] = 0.0
+    ci = cutoff_interval(p, y, costs, sample_weight=w, n_resamples=40, random_state=1,
+                         score_bounds=(0, 1))
+    same = cutoff_interval(p[w > 0], y[w > 0], costs, n_resamples=40, random_state=1,
+                           score_bounds=(0, 1))
+    np.testing.assert_array_equal(ci.bootstrap_cutoffs, same.bootstrap_cutoffs)
 
 
 def test_cutoff_interval_fold_spread():
@@ -393,4 +425,4 @@ def test_cutoff_interval_fold_spread():
         ref = search_cutoff(p[fold == k], y[fold == k], {"fp": 1.0, "fn": 1.0},
                             score_bounds=(0, 1))
         assert ci.fold_cutoffs[k] == pytest.approx(ref.cutoff)
-    assert ci.fold_low <= 0.5 <= ci.fold_high or abs(ci.fold_low - 0.5) < 0.1
+    assert (ci.fold_low, ci.fold_high) == (ci.fold_cutoffs.min(), ci.fold_cutoffs.max())

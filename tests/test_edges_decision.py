@@ -121,3 +121,15 @@ def test_tuned_offsets_are_invariant_to_scaling_the_costs():
     exact = tune_class_offsets(p, y, costs * 2.0**1020)  # power of two: exact scaling
     np.testing.assert_array_equal(exact.offsets, small.offsets)
     assert exact.cost == small.cost * 2.0**1020
+
+
+def test_tiny_mean_costs_are_not_tied_by_an_absolute_tolerance():
+    # only negatives: flagging the 0.75 row costs 1/23 of the fp cost, flagging nothing costs 0.
+    # The fn cost (huge, or tiny when the matrix is scaled) never applies; the optimum is to flag
+    # nothing whatever the units.
+    s = np.array([0.75] + [0.0] * 22)
+    y = np.zeros(23, dtype=int)
+    for unit in (1.0, 2.0**-1000, 1e-300):
+        res = search_cutoff(s, y, np.array([[0.0, 1.0], [4.5e307, 1.0]]) * unit,
+                            score_bounds=(0, 1))
+        assert abs(res.cost) <= 1e-12 * unit and res.interval == (0.75, 1.0)

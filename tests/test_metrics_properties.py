@@ -195,7 +195,7 @@ def test_murphy_identity_exact(data):
     assert abs(d.reliability - d.resolution + d.uncertainty - d.brier) < 1e-12
     assert d.within_bin_variance == 0.0 and d.within_bin_covariance == 0.0
     assert d.brier == pytest.approx(brier_score(y, p, sample_weight=w), abs=1e-15)
-    # binned (Stephenson et al. 2008 extra terms close the gap exactly)
+    # binned (the two extra terms of Stephenson, Coelho & Jolliffe 2008 close the gap exactly)
     b = brier_decomposition(y, p, sample_weight=w, n_bins=3)
     total = b.reliability - b.resolution + b.uncertainty + b.within_bin_variance
     assert abs(total - b.within_bin_covariance - b.brier) < 1e-12

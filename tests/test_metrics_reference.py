@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import inspect
+import warnings
 
 import numpy as np
 import pytest
@@ -210,7 +211,7 @@ def test_classwise_is_mean_of_sklearn_one_vs_rest_curves(iris_holdout):
 
 
 # ---------------------------------------------------------------------------------------------
-# Brier decomposition — Murphy (1973); Stephenson et al. (2008) for the binned terms
+# Brier decomposition — Murphy (1973); Stephenson, Coelho & Jolliffe (2008) for the binned terms
 # ---------------------------------------------------------------------------------------------
 
 
@@ -239,9 +240,10 @@ def test_murphy_identity_and_brier_on_real_data(cancer_holdout):
 
 
 def test_binned_decomposition_stephenson_terms(cancer_holdout):
-    # Stephenson, Coelho, Doblas-Reyes & Balmaseda (2008), eq. for the binned decomposition:
-    # BS = REL - RES + UNC + WBV - WBC  (value from memory of the paper's form; the algebra is
-    # also a direct expansion of (p - y)^2 around the bin means)
+    # Stephenson, Coelho & Jolliffe (2008), "Two extra components in the Brier score
+    # decomposition", Weather and Forecasting 23:752-757, the binned decomposition:
+    # BS = REL - RES + UNC + WBV - WBC  (the form recalled from memory of the paper; the algebra
+    # is also a direct expansion of (p - y)^2 around the bin means)
     y, p = cancer_holdout
     d = brier_decomposition(y, p, n_bins=10)
     assert d.within_bin_variance > 0
@@ -401,6 +403,32 @@ def test_bootstrap_weights_equal_explicit_resampling():
     np.testing.assert_allclose(res.bootstrap_distribution, explicit, rtol=1e-12, atol=1e-15)
     lo, hi = np.quantile(explicit, [0.025, 0.975])  # linear interpolation, as scipy
     assert res.confidence_interval == pytest.approx((lo, hi), rel=1e-12)
+
+
+def test_bootstrap_metric_ignoring_weights_gets_copied_rows():
+    # Regression: a metric that accepts but ignores sample_weight gave every resample the full-
+    # data value, a zero-width interval, silently. Now it is detected, warned about, and the rows
+    # are copied: the result equals the explicit row bootstrap with the documented draws.
+    rng = np.random.default_rng(4)
+    p = rng.uniform(size=80)
+    y = (rng.uniform(size=80) < p).astype(int)
+
+    def mean_forecast(y_true, y_prob, sample_weight=None):  # ignores the weights
+        return float(np.mean(y_prob))
+
+    with pytest.warns(UserWarning, match="does not treat `sample_weight` as row frequencies"):
+        res = bootstrap_interval(mean_forecast, y, p, n_resamples=100, random_state=2)
+    draw = check_random_state(2)
+    explicit = [np.mean(p[draw.randint(0, 80, size=80)]) for _ in range(100)]
+    np.testing.assert_allclose(res.bootstrap_distribution, explicit, rtol=1e-12)
+    assert res.confidence_interval.high - res.confidence_interval.low > 0.05
+
+
+def test_bootstrap_frequency_weighted_metric_raises_no_warning(cancer_holdout):
+    y, p = cancer_holdout
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", UserWarning)
+        bootstrap_interval(brier_score, y, p, n_resamples=20, random_state=0)
 
 
 def test_bootstrap_vector_statistic_net_benefit(cancer_holdout):

@@ -39,13 +39,22 @@ def test_consistency_band_matches_binomial_quantiles():
         assert low[j] < pj < high[j]
 
 
-def test_consistency_band_is_seeded_and_weighted_like_copies():
+def test_consistency_band_is_seeded_and_weights_act_as_documented():
     rng = np.random.default_rng(0)
     p = rng.uniform(size=300)
     idx = (p * 3).astype(int)
     a = consistency_band(p, idx, 3, random_state=1)
     b = consistency_band(p, idx, 3, random_state=1)
     np.testing.assert_array_equal(a[0], b[0])
+    # weights: the simulated frequency is the weighted share of simulated positives, so scaling
+    # every weight by a constant changes nothing (same draws)...
+    c = consistency_band(p, idx, 3, sample_weight=np.full(300, 2.5), random_state=1)
+    np.testing.assert_allclose(c, a, rtol=1e-12)
+    # ...and unequal weights do change the band: a bin dominated by one row's draw is wider
+    w = np.ones(300)
+    w[np.flatnonzero(idx == 1)[0]] = 1000.0
+    d = consistency_band(p, idx, 3, sample_weight=w, random_state=1)
+    assert d[1][1] - d[0][1] > a[1][1] - a[0][1] + 0.2
     # an empty bin has no band
     low, high = consistency_band(p[idx < 2], idx[idx < 2], 3, random_state=0)
     assert np.isnan(low[2]) and np.isnan(high[2])

@@ -12,7 +12,7 @@ from sklearn.base import clone
 from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 
-from probwrap import PriorShiftWrapper
+from probwrap import CostPolicyWrapper, PriorShiftWrapper
 from probwrap.shift import adjust_to_prior
 
 
@@ -152,10 +152,9 @@ def test_pickle_round_trip_keeps_adaptation(fitted):
 def test_cost_policy_actions_move_after_adapt():
     # Decisions move with prevalence: CostPolicyWrapper's Bayes rule reads the inner
     # predict_proba, so after adapt (prevalence 10 % -> 40 %) more rows get the costly action.
-    cost_policy = pytest.importorskip("probwrap._cost_policy")
     rng = np.random.default_rng(7)
     X, y = gaussian_data(2000, 0.1, rng)
-    policy = cost_policy.CostPolicyWrapper(
+    policy = CostPolicyWrapper(
         PriorShiftWrapper(LogisticRegression(), n_resamples=0, random_state=0),
         costs={"tp": 5.0, "fp": 5.0, "fn": 50.0, "tn": 0.0},
         strategy="bayes",

@@ -59,7 +59,7 @@ def test_replicates_are_poisson_reweighted_counts_and_merge():
 
 
 def test_tally_cutoff_interval_matches_the_in_memory_bootstrap():
-    # Outside reference: probwrap.decision.cutoff_interval resamples the rows themselves
+    # Consistency test: probwrap.decision.cutoff_interval resamples the rows themselves
     # (multinomial bootstrap, Efron & Tibshirani 1993, ch. 13). With B = 300 resamples each, the
     # Monte-Carlo standard error of a 2.5 % / 97.5 % percentile is about 0.16 standard deviations
     # of the bootstrap distribution (= 0.04 of the 95 % width), so the endpoints of the two
@@ -82,8 +82,9 @@ def test_tally_cutoff_interval_matches_the_in_memory_bootstrap():
 
 def test_tally_prior_interval_covers_like_the_in_memory_bootstrap():
     # Small seeded coverage simulation: class-conditional scores N(+-1, 1) give exact posteriors
-    # expit(2 s) at prior 1/2; the unlabelled batch has true prior 0.3. Reference: the in-memory
-    # multinomial bootstrap of PriorEstimator.estimate on the same rows. Both 90 % intervals
+    # expit(2 s) at prior 1/2; the unlabelled batch has true prior 0.3 (the outside fact: the
+    # coverage of the true value). Consistency: the in-memory multinomial bootstrap of
+    # PriorEstimator.estimate on the same rows. Both 90 % intervals
     # cover 0.3 in about 80-85 % of runs here (a percentile interval from 60 resamples of
     # 1500 + 1500 rows undercovers a little; measured over 100 runs: 0.84 from tallies, 0.81
     # in memory). Over these 40 runs we require at least 75 % for the tally interval and a

@@ -104,6 +104,22 @@ def test_calibration_wrapper_on_a_dask_dataframe(client):
     np.testing.assert_allclose(again.predict_proba(df[cols]), remote.predict_proba(df[cols]))
 
 
+def test_features_and_labels_read_from_one_parquet_folder_line_up(client, tmp_path):
+    # Regression: with the query optimiser of current Dask, reading fewer columns of a Parquet
+    # folder gives fewer partitions, so `frame[features]` had 4 and `frame["damaged"]` 2; the
+    # wrapper now takes the partitions as the frames define them.
+    X, y = _data(40_000, seed=5)
+    cols = ["weight", "route_km", "transfers"]
+    df = pd.DataFrame(X, columns=cols).assign(damaged=y)
+    for i in range(4):
+        df.iloc[i * 10_000 : (i + 1) * 10_000].to_parquet(tmp_path / f"part-{i}.parquet")
+    frame = dd.read_parquet(str(tmp_path / "*.parquet"))
+    est = FrozenEstimator(LogisticRegression().fit(df[cols].iloc[:2000], y[:2000]))
+    remote = CalibrationWrapper(est, method="isotonic").fit(frame[cols], frame["damaged"])
+    assert remote.tally_.n_rows == 40_000
+    np.testing.assert_allclose(remote.tally_.label_weight, [np.sum(y == 0), np.sum(y == 1)])
+
+
 def test_tuned_cutoff_on_dask_within_a_tenth_of_a_percent(client, model):
     X, y = _data(40_000, seed=5)
     w = np.random.default_rng(6).uniform(0.5, 1.5, size=y.shape[0])

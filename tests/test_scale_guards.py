@@ -34,7 +34,7 @@ def test_monitor_on_dask_blocks_equals_in_memory_batches(client, model):
     X_new = np.vstack([_data(2000, seed=s, shift=sh)[0] for s, sh in ((2, 0.0), (3, 0.5), (4, 1.0))])
     wrapper = PriorShiftWrapper(model, n_resamples=30, random_state=0).fit(X, y)
     remote = wrapper.monitor(da.from_array(X_new, chunks=(2000, 3)))
-    # reference: the in-memory monitor (probwrap.shift.prior_by_batch) with batches = blocks
+    # consistency test: the in-memory monitor (probwrap.shift.prior_by_batch), batches = blocks
     local = wrapper.monitor(X_new, batch_size=2000)
     for field in ("n_rows", "prior", "lower", "upper", "shift_statistic"):
         np.testing.assert_allclose(remote[field], local[field], rtol=1e-10, atol=1e-12)
@@ -72,7 +72,7 @@ def test_expected_costs_and_row_costs_on_dask(client, model):
         return out
 
     remote = CostPolicyWrapper(model, costs=costs).fit(Xd, da.from_array(y, chunks=1500))
-    local = CostPolicyWrapper(model, costs=costs).fit(X, y)  # reference: in memory
+    local = CostPolicyWrapper(model, costs=costs).fit(X, y)  # consistency: in memory
     assert remote.heldout_cost_ == pytest.approx(local.heldout_cost_, rel=1e-12)
     E = remote.expected_costs(Xd)
     assert isinstance(E, da.Array)

@@ -37,7 +37,7 @@ def test_multiclass_dask_matches_in_memory(client, model, method, calibration):
     remote = PriorShiftWrapper(model, **kw).fit(
         da.from_array(X, chunks=(3000, 2)), da.from_array(y, chunks=3000)
     ).adapt(da.from_array(X_new, chunks=(2000, 2)))
-    # reference: the in-memory path (PriorEstimator on all rows) on the same rows
+    # consistency test: the in-memory path (PriorEstimator on all rows) on the same rows
     local = PriorShiftWrapper(model, **kw).fit(X, y).adapt(X_new)
     np.testing.assert_allclose(remote.source_prior_, local.source_prior_, atol=1e-12)
     np.testing.assert_allclose(remote.confusion_matrix_, local.confusion_matrix_, atol=1e-9)
@@ -64,7 +64,7 @@ def test_multiclass_calibration_on_dask(client, model, method, tol):
     X, y = _data(12_000, 3, [0.5, 0.3, 0.2])
     Xd = da.from_array(X, chunks=(3000, 2))
     remote = CalibrationWrapper(model, method=method).fit(Xd, da.from_array(y, chunks=3000))
-    local = CalibrationWrapper(model, method=method).fit(X, y)  # reference: in memory, all rows
+    local = CalibrationWrapper(model, method=method).fit(X, y)  # consistency: in memory, all rows
     p_remote = remote.predict_proba(Xd).compute()
     p_local = local.predict_proba(X)
     if method == "temperature":

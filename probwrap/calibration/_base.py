@@ -15,6 +15,7 @@ from .._validation import (
     check_same_length,
     check_sample_weight,
     check_scores,
+    plain,
 )
 
 __all__ = ["CalibrationMap", "NONPARAMETRIC", "WeightScaleWarning"]
@@ -54,7 +55,8 @@ def count_weights(w: np.ndarray) -> tuple[np.ndarray, bool]:
     >>> count_weights(np.array([2.0, 1.0, 1.0]))[1]
     False
     """
-    total = float(w.sum())
+    with np.errstate(over="ignore"):  # a total beyond the largest double is inf: no rescaling
+        total = float(w.sum())
     n_rows = int(np.count_nonzero(w))
     if total >= n_rows or total <= 0.0:
         return w, False
@@ -71,7 +73,11 @@ def rule_of_succession_targets(y: np.ndarray, w: np.ndarray, k: int) -> tuple[np
     rule of succession under a uniform Dirichlet prior. Returns per-row arrays
     ``(target of the true class, target of each other class)``.
     """
-    counts = np.bincount(y.astype(np.intp), weights=w, minlength=k)[y.astype(np.intp)]
+    with np.errstate(over="ignore"):
+        counts = np.bincount(y.astype(np.intp), weights=w, minlength=k)[y.astype(np.intp)]
+    # (N + 1) / (N + k) is exactly 1 in doubles for any N above 2**53: capping counts that
+    # overflow (weights near the largest double) changes no target
+    counts = np.minimum(counts, 2.0**1000)
     return (counts + 1.0) / (counts + k), 1.0 / (counts + k)
 
 
@@ -141,6 +147,12 @@ class CalibrationMap(BaseEstimator):
         self.floor_ = 0.0
         if s.ndim == 1:
             y01, classes = check_binary_labels(y, name="y")
+            for k in (0, 1):
+                if not np.any(w[y01 == k] > 0):
+                    raise ValueError(
+                        f"`sample_weight` is zero for every row of class {plain(classes[k])!r}; "
+                        "each of the two classes needs some positive weight."
+                    )
             self.classes_ = classes
             self.n_classes_ = 2
             self.n_score_columns_ = 1
@@ -176,9 +188,19 @@ class CalibrationMap(BaseEstimator):
         out = np.asarray(self._predict(s), dtype=float)
         floor = float(getattr(self, "floor_", 0.0))
         if out.ndim == 1:
-            return np.clip(out, floor, 1.0 - floor)
-        out = np.clip(out, floor, None)
-        return out / out.sum(axis=1, keepdims=True)
+            out = np.clip(out, floor, 1.0 - floor)
+        else:
+            out = np.clip(out, floor, None)
+            out = out / out.sum(axis=1, keepdims=True)
+        if not np.all(np.isfinite(out)):
+            # never hand out a NaN or infinite probability; the maps guard against it, so this
+            # means the fitted attributes were damaged
+            raise ValueError(
+                f"{type(self).__name__} produced non-finite probabilities for "
+                f"{int(np.count_nonzero(~np.isfinite(out)))} value(s) of `scores`; its fitted "
+                "attributes are not usable."
+            )
+        return out
 
     def _uses_counts(self) -> bool:
         """Whether the fit uses counts (and so needs weights on the row-count scale)."""
@@ -191,7 +213,8 @@ class CalibrationMap(BaseEstimator):
         probability is estimated as ``1 / (n + k)``; a calibration set of ``n`` rows supports no
         probability more extreme than that.
         """
-        self.floor_ = float(1.0 / (float(w.sum()) + k))
+        with np.errstate(over="ignore"):  # a total beyond the largest double gives a floor of 0
+            self.floor_ = float(1.0 / (float(w.sum()) + k))
 
     # -- helpers ---------------------------------------------------------------------------
     def _check_scores(self, scores: Any, *, fitting: bool) -> np.ndarray:

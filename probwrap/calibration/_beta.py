@@ -7,6 +7,7 @@ import warnings
 import numpy as np
 from scipy.special import expit, log_expit
 
+from .._validation import power_of_two_unit
 from ._base import CalibrationMap
 from ._platt import _logistic_loss, _separated, _weighted_logistic, smoothed_binary_targets
 
@@ -99,6 +100,7 @@ class BetaMap(CalibrationMap):
         if self.smooth_targets:
             y = smoothed_binary_targets(y, w)
             self._set_floor(w, 2)
+        w = w / power_of_two_unit(w)  # weights enter as a weighted mean; keeps the sum finite
         wn = w / w.sum()
         best: tuple[float, float, float] | None = None
         best_loss = np.inf
@@ -126,4 +128,7 @@ class BetaMap(CalibrationMap):
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
         X = _beta_features(scores)
-        return expit(self.a_ * X[:, 0] + self.b_ * X[:, 1] + self.c_)
+        # ln p and -ln(1 - p) are never both large, so an overflow is a saturation to -inf or
+        # +inf (probability 0 or 1), never inf - inf
+        with np.errstate(over="ignore"):
+            return expit(self.a_ * X[:, 0] + self.b_ * X[:, 1] + self.c_)

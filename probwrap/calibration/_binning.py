@@ -6,6 +6,7 @@ import numbers
 
 import numpy as np
 
+from .._validation import plain, power_of_two_unit
 from ._base import CalibrationMap
 from ._isotonic import _pool_ties
 
@@ -88,7 +89,7 @@ class BinningMap(CalibrationMap):
             or not isinstance(self.n_bins, numbers.Integral)
             or self.n_bins < 1
         ):
-            raise ValueError(f"`n_bins` must be an integer >= 1; got {self.n_bins!r}.")
+            raise ValueError(f"`n_bins` must be an integer >= 1; got {plain(self.n_bins)!r}.")
         if (
             isinstance(self.prior_strength, bool)
             or not isinstance(self.prior_strength, numbers.Real)
@@ -96,7 +97,7 @@ class BinningMap(CalibrationMap):
             or self.prior_strength < 0
         ):
             raise ValueError(
-                f"`prior_strength` must be a finite number >= 0; got {self.prior_strength!r}."
+                f"`prior_strength` must be a finite number >= 0; got {plain(self.prior_strength)!r}."
             )
 
     def _uses_counts(self) -> bool:
@@ -106,6 +107,11 @@ class BinningMap(CalibrationMap):
         self._check_params()
         if self.prior_strength > 0:
             self._set_floor(w, 2)
+        # work in weights divided by a power of two (exact), so that sums near the largest
+        # double stay finite; the prior, counted in rows, is divided by the same unit (small
+        # weights are left alone: the prior would overflow instead)
+        unit = max(power_of_two_unit(w), 1.0)
+        w = w / unit
         distinct, weight, label_sum = _pool_ties(scores, y, w)
         total = weight.sum()
         before = np.cumsum(weight) - weight
@@ -121,14 +127,20 @@ class BinningMap(CalibrationMap):
         bin_weight = np.bincount(used, weights=weight, minlength=n_used)
         bin_label = np.bincount(used, weights=label_sum, minlength=n_used)
         rate = label_sum.sum() / total
-        strength = float(self.prior_strength)
+        strength = float(self.prior_strength) / unit
         self.values_ = np.clip((bin_label + rate * strength) / (bin_weight + strength), 0.0, 1.0)
         upper_first = np.flatnonzero(new_bin)[1:]  # first distinct score of bins 1, 2, ...
         lo, hi = distinct[upper_first - 1], distinct[upper_first]
         mid = lo + 0.5 * (hi - lo)
         # adjacent floating-point scores: the midpoint may round onto the lower score
         self.edges_ = np.where(mid > lo, mid, hi)
-        self.bin_weights_ = bin_weight
+        with np.errstate(over="ignore"):
+            self.bin_weights_ = bin_weight * unit
+        if not np.all(np.isfinite(self.bin_weights_)):
+            raise ValueError(
+                "`sample_weight` is too large: the total weight of a bin exceeds the largest "
+                "double; divide all weights by one constant."
+            )
         self.n_bins_used_ = n_used
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:

@@ -5,10 +5,15 @@ from __future__ import annotations
 import numpy as np
 from scipy.optimize import isotonic_regression
 
+from .._validation import plain, power_of_two_unit
 from ._base import NONPARAMETRIC, CalibrationMap
 from ._platt import _separated
 
 __all__ = ["IsotonicMap"]
+
+#: class counts are capped here for smoothed targets: (N + 1) / (N + 2) is exactly 1 in
+#: doubles for any N above 2**53, so the cap changes no target and keeps sums finite
+_COUNT_CAP = 2.0**1000
 
 
 def _pool_ties(
@@ -126,18 +131,32 @@ class IsotonicMap(CalibrationMap):
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         if not isinstance(self.smooth_targets, (bool, np.bool_)):
-            raise ValueError(f"`smooth_targets` must be True or False; got {self.smooth_targets!r}.")
+            raise ValueError(
+                f"`smooth_targets` must be True or False; got {plain(self.smooth_targets)!r}."
+            )
+        if self.smooth_targets:
+            # Platt's targets from the class counts (in rows, before any rescaling below)
+            with np.errstate(over="ignore", invalid="ignore"):
+                n_pos = float(w @ y)
+                n_neg = float(w.sum()) - n_pos
+            if not (np.isfinite(n_pos) and np.isfinite(n_neg)):
+                # counts beyond the largest double: (N + 1) / (N + 2) is 1 and 1 / (N + 2) is 0
+                # to double precision long before that, so capped counts give the same targets
+                unit = power_of_two_unit(w)
+                n_pos = min(float((w / unit) @ y) * unit, _COUNT_CAP)
+                n_neg = min(float((w / unit) @ (1.0 - y)) * unit, _COUNT_CAP)
+            t_neg, t_pos = 1.0 / (n_neg + 2.0), (n_pos + 1.0) / (n_pos + 2.0)
+            self._set_floor(w, 2)
+        # the fit is a weighted mean per block, unchanged by scaling every weight; a power of two
+        # (exact) keeps the block sums finite for weights near the largest double
+        w = w / power_of_two_unit(w)
         distinct, weight, label_sum = _pool_ties(scores, y, w, unit_weight_as_none=True)
         if _separated(scores, y, w):
             self.boundary_ = "scores separate the classes: the plain fit is a 0/1 step"
         if self.smooth_targets:
             # pooled target sums: each row's target is t- plus (t+ - t-) for a positive
-            n_pos = float(w @ y)
-            n_neg = float(w.sum()) - n_pos
-            t_neg, t_pos = 1.0 / (n_neg + 2.0), (n_pos + 1.0) / (n_pos + 2.0)
             group_weight = np.ones(distinct.shape[0]) if weight is None else weight
             label_sum = t_neg * group_weight + (t_pos - t_neg) * label_sum
-            self._set_floor(w, 2)
         self.thresholds_ = distinct
         # The pooling pass itself is SciPy's compiled weighted PAV (scipy.optimize, since 1.12):
         # one O(m) pass over the m distinct scores, an order of magnitude faster than a Python
@@ -148,4 +167,38 @@ class IsotonicMap(CalibrationMap):
         self.values_ = np.clip(fit.x, 0.0, 1.0)
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
-        return np.interp(scores, self.thresholds_, self.values_)
+        return _interpolate(scores, self.thresholds_, self.values_)
+
+
+def _interpolate(x: np.ndarray, xp: np.ndarray, fp: np.ndarray) -> np.ndarray:
+    """``np.interp``, made exact where its slope ``(f1 - f0) / (x1 - x0)`` is not finite.
+
+    Across a gap of denormal width the slope overflows (``np.interp`` then returns 1.0 where
+    ~5e-14 is right), and across a gap wider than the largest double the difference does. There
+    the value is computed as ``f0 + t (f1 - f0)`` with the fraction ``t = (x - x0) / (x1 - x0)``
+    (of halves when the gap overflows).
+    """
+    out = np.interp(x, xp, fp)
+    if xp.shape[0] < 2:
+        return out
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+        dx = np.diff(xp)
+        bad_segment = ~np.isfinite(np.diff(fp) / dx) | ~np.isfinite(dx)
+    if not bad_segment.any():
+        return out
+    seg = np.searchsorted(xp, x, side="right") - 1  # xp[seg] <= x < xp[seg + 1]
+    inside = (seg >= 0) & (seg < xp.shape[0] - 1)
+    redo = np.flatnonzero(inside)[bad_segment[seg[inside]]]
+    if redo.size:
+        j = seg[redo]
+        x0, x1, xv = xp[j], xp[j + 1], x[redo]
+        with np.errstate(over="ignore", invalid="ignore"):
+            gap = x1 - x0
+            t = np.where(
+                np.isfinite(gap),
+                (xv - x0) / gap,
+                (0.5 * xv - 0.5 * x0) / (0.5 * x1 - 0.5 * x0),
+            )
+        t = np.clip(t, 0.0, 1.0)
+        out[redo] = fp[j] + t * (fp[j + 1] - fp[j])
+    return out

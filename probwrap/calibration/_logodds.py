@@ -7,7 +7,7 @@ from typing import Any
 import numpy as np
 from scipy.special import expit, log_softmax
 
-from .._validation import check_proba, check_scores
+from .._validation import check_proba, check_scores, plain
 
 __all__ = ["proba_to_log_odds", "proba_to_log_proba", "log_odds_to_proba", "DEFAULT_CLIP"]
 
@@ -50,9 +50,15 @@ def proba_to_log_odds(proba: Any, *, clip: float = DEFAULT_CLIP) -> np.ndarray:
             )
         p = p[:, 1]
     if not 0.0 < clip < 0.5:
-        raise ValueError(f"`clip` must be in (0, 0.5); got {clip!r}.")
+        raise ValueError(f"`clip` must be in (0, 0.5); got {plain(clip)!r}.")
     p = np.clip(p, clip, 1.0 - clip)
-    return np.log(p) - np.log1p(-p)
+    with np.errstate(divide="ignore"):
+        out = np.log(p) - np.log1p(-p)
+    if np.isinf(out).any():
+        # 1 - clip rounds to 1 for clip below ~1.1e-16 (log1p(-1) = -inf): use the exact
+        # log-odds of 1 - clip there, which keeps 1 finite, symmetric to 0 and above every p < 1
+        out = np.where(np.isinf(out), float(np.log1p(-clip) - np.log(clip)), out)
+    return out
 
 
 def proba_to_log_proba(proba: Any, *, clip: float = DEFAULT_CLIP) -> np.ndarray:
@@ -66,7 +72,7 @@ def proba_to_log_proba(proba: Any, *, clip: float = DEFAULT_CLIP) -> np.ndarray:
     """
     p = check_proba(proba, name="proba", ndim=2)
     if not 0.0 < clip < 0.5:
-        raise ValueError(f"`clip` must be in (0, 0.5); got {clip!r}.")
+        raise ValueError(f"`clip` must be in (0, 0.5); got {plain(clip)!r}.")
     return np.log(np.maximum(p, clip))
 
 

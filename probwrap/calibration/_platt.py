@@ -8,6 +8,7 @@ import numpy as np
 from scipy.special import expit
 from sklearn.exceptions import ConvergenceWarning
 
+from .._validation import plain, power_of_two_unit
 from ._base import CalibrationMap, rule_of_succession_targets
 
 __all__ = ["PlattMap"]
@@ -31,10 +32,16 @@ def _weighted_logistic(
     Returns ``(coef, intercept, converged)`` on the original scale of ``X``.
     """
     n, d = X.shape
-    wn = w / w.sum()
+    # Powers of two (exact): the weights only enter as a weighted mean, and each column is
+    # standardised anyway; this keeps sums and squares finite near the largest double.
+    wn = w / power_of_two_unit(w)
+    wn = wn / wn.sum()
+    units = np.array([power_of_two_unit(X[:, j]) for j in range(d)])
+    X = X / units
     mu = wn @ X
     sd = np.sqrt(wn @ (X - mu) ** 2)
-    keep = sd > 1e-12 * np.maximum(1.0, np.abs(mu))
+    with np.errstate(over="ignore"):  # (on the original scale; inf compares correctly)
+        keep = sd * units > 1e-12 * np.maximum(1.0, np.abs(mu * units))
     Z = (X[:, keep] - mu[keep]) / sd[keep]
     A = np.column_stack([np.ones(n), Z])
     theta = np.zeros(A.shape[1])
@@ -68,7 +75,7 @@ def _weighted_logistic(
     coef = np.zeros(d)
     coef[keep] = theta[1:] / sd[keep]
     intercept = float(theta[0] - coef @ mu)
-    return coef, intercept, converged
+    return coef / units, intercept, converged
 
 
 def _separated(s: np.ndarray, y: np.ndarray, w: np.ndarray) -> bool:
@@ -153,7 +160,7 @@ class PlattMap(CalibrationMap):
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         if not isinstance(self.smooth_targets, (bool, np.bool_)):
-            raise ValueError(f"`smooth_targets` must be True or False; got {self.smooth_targets!r}.")
+            raise ValueError(f"`smooth_targets` must be True or False; got {plain(self.smooth_targets)!r}.")
         if scores.shape[0] > 2 and scores.min() >= 0.0 and scores.max() <= 1.0:
             warnings.warn(
                 "PlattMap: every one of `scores` lies in [0, 1], so they look like probabilities; "
@@ -190,4 +197,5 @@ class PlattMap(CalibrationMap):
         return bool(self.smooth_targets)
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
-        return expit(self.slope_ * scores + self.intercept_)
+        with np.errstate(over="ignore"):  # slope * score beyond the largest double saturates
+            return expit(self.slope_ * scores + self.intercept_)

@@ -8,6 +8,7 @@ import numpy as np
 from scipy.optimize import brentq
 from scipy.special import expit, softmax
 
+from .._validation import plain, power_of_two_unit
 from ._base import CalibrationMap
 
 __all__ = ["TemperatureMap"]
@@ -139,12 +140,22 @@ class TemperatureMap(CalibrationMap):
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         if not isinstance(self.smooth_targets, (bool, np.bool_)):
-            raise ValueError(f"`smooth_targets` must be True or False; got {self.smooth_targets!r}.")
+            raise ValueError(f"`smooth_targets` must be True or False; got {plain(self.smooth_targets)!r}.")
         k = 2 if scores.ndim == 1 else scores.shape[1]
         counts = None
         if self.smooth_targets:
-            counts = np.bincount(y.astype(np.intp), weights=w, minlength=k).astype(float)
+            with np.errstate(over="ignore"):
+                counts = np.bincount(y.astype(np.intp), weights=w, minlength=k).astype(float)
+            # (N + 1) / (N + 2) is exactly 1 in doubles for any N above 2**53: capping counts
+            # near the largest double changes no target and keeps the sums finite
+            counts = np.minimum(counts, 2.0**1000)
             self._set_floor(w, k)
+        # The loss depends on scores / T only, so T(c s) = c T(s): fit on scores divided by a
+        # power of two (exact) near their largest magnitude, where squares cannot overflow, and
+        # scale the temperature back. Weights enter as a weighted mean: scaled the same way.
+        unit = power_of_two_unit(scores)
+        scores = scores / unit
+        w = w / power_of_two_unit(w)
         wn = w / w.sum()
         if scores.ndim == 1:
             square = scores**2
@@ -168,17 +179,27 @@ class TemperatureMap(CalibrationMap):
         else:
             log_beta = brentq(_loss_slope, lo, hi, args=args, xtol=1e-14, rtol=1e-15)
         log_t = -float(log_beta)
+        with np.errstate(over="ignore"):
+            temperature = np.exp(log_t) * unit
+        # beyond the double range only for scores near the largest or smallest double whose best
+        # T is larger or smaller still; the nearest double gives the same saturated probabilities
+        temperature = float(np.clip(temperature, np.nextafter(0.0, 1.0), np.finfo(float).max))
         if at_end:
             warnings.warn(
                 "TemperatureMap: the best temperature lies at the end of the search range "
-                f"(T = {np.exp(log_t):.3g}); the scores are either unrelated to the labels or "
+                f"(T = {temperature:.3g}); the scores are either unrelated to the labels or "
                 "separate the classes perfectly.",
                 UserWarning,
                 stacklevel=3,
             )
-        self.temperature_ = float(np.exp(log_t))
+        self.temperature_ = temperature
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
-        if scores.ndim == 1:
-            return expit(scores / self.temperature_)
-        return softmax(scores / self.temperature_, axis=1)
+        # s / T may overflow for scores near the largest double and a small T: that saturates
+        # to probability 0 or 1. Rows are shifted to their maximum first (softmax does not
+        # change), so an overflow can only give -inf, never inf - inf.
+        with np.errstate(over="ignore", divide="ignore"):
+            if scores.ndim == 1:
+                return expit(scores / self.temperature_)
+            shifted = scores - scores.max(axis=1, keepdims=True)
+            return softmax(shifted / self.temperature_, axis=1)

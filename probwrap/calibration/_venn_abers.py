@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
 from sklearn.utils.validation import check_is_fitted
 
+from .._validation import power_of_two_unit
 from ._base import NONPARAMETRIC, CalibrationMap
 from ._isotonic import _pool_ties
 
@@ -67,6 +69,7 @@ def _insertion_values(
     left_end: np.ndarray,
     right_start: np.ndarray,
     label: float,
+    test_weight: float,
     prev: np.ndarray,
     succ: np.ndarray,
     up_prev: list[np.ndarray],
@@ -84,7 +87,9 @@ def _insertion_values(
     """
 
     def slope_to_right(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-        return (cy[b] + label - cy[a]) / (cx[b] + 1.0 - cx[a])
+        # differences first: cx[b] + w - cx[a] loses the test weight w when cx is huge (1e17 + 1
+        # == 1e17), which turned a == b into 0 / 0
+        return ((cy[b] - cy[a]) + label * test_weight) / ((cx[b] - cx[a]) + test_weight)
 
     def tangent_slope(a: np.ndarray, start: np.ndarray) -> np.ndarray:
         # smallest slope from vertex a to the shifted right hull starting at `start`
@@ -104,7 +109,9 @@ def _insertion_values(
         # the tangent from a
         p = prev[a]
         dx = np.where(a > 0, cx[a] - cx[p], 1.0)
-        edge = (cy[a] - cy[p]) / dx
+        with np.errstate(divide="ignore", invalid="ignore"):
+            # two vertices can share one rounded cx next to a huge weight: a vertical edge
+            edge = np.where(dx > 0, (cy[a] - cy[p]) / np.where(dx > 0, dx, 1.0), np.inf)
         return (a > 0) & (edge > tangent_slope(a, right_start))
 
     a = left_end.copy()
@@ -171,7 +178,15 @@ class VennAbersMap(CalibrationMap):
         return True  # the test point weighs one row
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
-        distinct, weight, label_sum = _pool_ties(scores, y, w)
+        # The convex-hull tests multiply differences of cumulative weights, which overflow once
+        # the total weight passes ~1e154. Above 2**500 (a total bound by n times the largest
+        # weight), weights and the test point's unit weight are divided by one power of two
+        # that brings the total down to about 2**500: no slope changes, squares stay finite,
+        # and weights up to ~2**-500 of the total stay clear of underflow. Ordinary weights are
+        # not touched.
+        top = math.frexp(power_of_two_unit(w))[1] + math.ceil(math.log2(w.shape[0])) + 1
+        unit = math.ldexp(1.0, max(0, top - 500))  # (exponents: 2**top bounds the total)
+        distinct, weight, label_sum = _pool_ties(scores, y, w / unit)
         m = distinct.shape[0]
         cx = np.concatenate([[0.0], np.cumsum(weight)])
         cy = np.concatenate([[0.0], np.cumsum(label_sum)])
@@ -179,7 +194,7 @@ class VennAbersMap(CalibrationMap):
         up_prev, up_succ = _jump_table(prev), _jump_table(succ)
         gaps = np.arange(m + 1)
         ties = np.arange(m)
-        args = (prev, succ, up_prev, up_succ)
+        args = (1.0 / unit, prev, succ, up_prev, up_succ)
         self.thresholds_ = distinct
         self.p0_between_ = _insertion_values(cx, cy, gaps, gaps, 0.0, *args)
         self.p1_between_ = _insertion_values(cx, cy, gaps, gaps, 1.0, *args)

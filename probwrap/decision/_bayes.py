@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_proba
+from .._validation import check_proba, power_of_two_unit
 from ._costs import _resolve_costs
 
 __all__ = ["expected_costs", "bayes_actions"]
@@ -44,6 +44,18 @@ def expected_costs(proba: Any, costs: Any) -> np.ndarray:
     """
     p = _check_proba_2d(proba)
     matrix = _resolve_costs(costs, p.shape[0], p.shape[1])
+    unit = power_of_two_unit(matrix)
+    if unit <= 2.0**1000:
+        return _expected(p, matrix)
+    # Costs near the largest double: sums of products can overflow (rows of `proba` may sum to
+    # slightly more than one). Computed on costs divided by a power of two (exact), then scaled
+    # back and kept within the doubles; the true values lie within the range of the costs.
+    big = np.finfo(float).max
+    with np.errstate(over="ignore"):
+        return np.clip(_expected(p, matrix / unit) * unit, -big, big)
+
+
+def _expected(p: np.ndarray, matrix: np.ndarray) -> np.ndarray:
     if matrix.ndim == 2:
         return p @ matrix
     return np.einsum("nk,nka->na", p, matrix)
@@ -73,7 +85,11 @@ def bayes_actions(proba: Any, costs: Any, *, actions: Any = None) -> np.ndarray:
     >>> bayes_actions([0.02, 0.2], {"fp": 2.0, "fn": 35.0}, actions=["ship", "inspect"])
     array(['ship', 'inspect'], dtype='<U7')
     """
-    cost = expected_costs(proba, costs)
+    p = _check_proba_2d(proba)
+    matrix = _resolve_costs(costs, p.shape[0], p.shape[1])
+    # least expected cost is unchanged by scaling all costs: divide by a power of two (exact)
+    # so that huge costs cannot overflow to ties at infinity
+    cost = _expected(p, matrix / power_of_two_unit(matrix))
     index = np.argmin(cost, axis=1)
     if actions is None:
         return index

@@ -7,7 +7,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_sample_weight, check_scores, power_of_two_unit
+from .._validation import check_sample_weight, check_scores, plain, power_of_two_unit
 from ._cutoff import _SortedRows, check_capacity
 
 __all__ = ["ActionBudget", "action_savings", "fit_action_budget", "budget_actions"]
@@ -44,10 +44,10 @@ def _check_costs_2d(exp_costs: Any, action: Any) -> tuple[np.ndarray, int]:
     try:
         a = int(action)
     except (TypeError, ValueError) as exc:
-        raise ValueError(f"`action` must be a column index; got {action!r}.") from exc
+        raise ValueError(f"`action` must be a column index; got {plain(action)!r}.") from exc
     if not 0 <= a < E.shape[1]:
         raise ValueError(
-            f"`action` must be a column index in [0, {E.shape[1]}); got {action!r}."
+            f"`action` must be a column index in [0, {E.shape[1]}); got {plain(action)!r}."
         )
     return E, a
 
@@ -82,7 +82,8 @@ def budget_actions(expected_costs: Any, action: int, saving_threshold: float) ->
     """
     E, a = _check_costs_2d(expected_costs, action)
     best = np.argmin(E, axis=1)
-    saving = np.delete(E, a, axis=1).min(axis=1) - E[:, a]
+    with np.errstate(over="ignore"):  # an overflowing saving is +inf: the action is kept
+        saving = np.delete(E, a, axis=1).min(axis=1) - E[:, a]
     masked = E.copy()
     masked[:, a] = np.inf
     alternative = np.argmin(masked, axis=1)
@@ -126,12 +127,19 @@ def fit_action_budget(
         raise ValueError("`capacity` must be a share of rows in (0, 1]; got None.")
     w = check_sample_weight(sample_weight, E.shape[0])
     w = w / power_of_two_unit(w)  # shares are scale-free; this keeps the sums finite
-    unit = power_of_two_unit(E)  # so are the ranks of the savings: no overflow in differences
-    Eu = E / unit
+    unit, Eu = 1.0, E
+    with np.errstate(over="ignore"):
+        saving = np.delete(E, a, axis=1).min(axis=1) - E[:, a]
+    if not np.all(np.abs(saving) < 2.0**1000):
+        # differences of costs near the largest double overflow (and cut-offs between savings
+        # that large can too); the ranks of the savings do not change when all costs are
+        # divided by one power of two (exact)
+        unit = power_of_two_unit(E)
+        Eu = E / unit
+        saving = np.delete(Eu, a, axis=1).min(axis=1) - Eu[:, a]
     total = w.sum()
     best = np.argmin(Eu, axis=1)
     mask = best == a
-    saving = np.delete(Eu, a, axis=1).min(axis=1) - Eu[:, a]
     if w[mask].sum() <= cap * total * (1 + 1e-12):
         return ActionBudget(a, cap, 0.0, float(w[mask].sum() / total), False)
     rows = _SortedRows(saving[mask], None)
@@ -141,4 +149,8 @@ def fit_action_budget(
     j = int(np.argmax(share <= cap * (1 + 1e-12)))
     # rows saving at least the threshold keep the action: it must lie in (lower, upper]
     threshold = rows.mid[j] if rows.mid[j] > rows.lower[j] else rows.upper[j]
-    return ActionBudget(a, cap, float(threshold * unit), float(share[j]), True)
+    with np.errstate(over="ignore"):
+        # +inf when no double lies above the savings to keep out (savings at the top of the
+        # range): then no row keeps the action, as intended
+        threshold = float(threshold * unit)
+    return ActionBudget(a, cap, threshold, float(share[j]), True)

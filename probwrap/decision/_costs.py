@@ -12,6 +12,8 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
+
 __all__ = [
     "BINARY_COST_KEYS",
     "binary_cost_matrix",
@@ -62,9 +64,9 @@ def binary_cost_matrix(costs: Mapping[str, float], *, name: str = "costs") -> np
         try:
             value = float(value)
         except (TypeError, ValueError) as exc:
-            raise ValueError(f"`{name}[{key!r}]` must be a number; got {value!r}.") from exc
+            raise ValueError(f"`{name}[{key!r}]` must be a number; got {plain(value)!r}.") from exc
         if not np.isfinite(value):
-            raise ValueError(f"`{name}[{key!r}]` must be finite; got {value!r}.")
+            raise ValueError(f"`{name}[{key!r}]` must be finite; got {plain(value)!r}.")
         values[key] = value
     return np.array([[values["tn"], values["fp"]], [values["fn"], values["tp"]]], dtype=float)
 
@@ -201,7 +203,7 @@ def zero_one_costs(n_classes: int) -> np.ndarray:
            [1., 1., 0.]])
     """
     if int(n_classes) < 2:
-        raise ValueError(f"`n_classes` must be at least 2; got {n_classes!r}.")
+        raise ValueError(f"`n_classes` must be at least 2; got {plain(n_classes)!r}.")
     return 1.0 - np.eye(int(n_classes))
 
 

@@ -14,7 +14,13 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_same_length, check_sample_weight, check_scores, power_of_two_unit
+from .._validation import (
+    check_same_length,
+    check_sample_weight,
+    check_scores,
+    plain,
+    power_of_two_unit,
+)
 from ._costs import _resolve_costs
 
 __all__ = [
@@ -102,9 +108,9 @@ def check_capacity(capacity: Any, *, name: str = "capacity") -> float | None:
     try:
         value = float(capacity)
     except (TypeError, ValueError) as exc:
-        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {capacity!r}.") from exc
+        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {plain(capacity)!r}.") from exc
     if isinstance(capacity, bool) or not (0.0 < value <= 1.0):
-        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {capacity!r}.")
+        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {plain(capacity)!r}.")
     return value
 
 
@@ -115,10 +121,10 @@ def _check_bounds(score_bounds: Any) -> tuple[float, float] | None:
         lo, hi = (float(v) for v in score_bounds)
     except (TypeError, ValueError) as exc:
         raise ValueError(
-            f"`score_bounds` must be a pair (low, high) of numbers; got {score_bounds!r}."
+            f"`score_bounds` must be a pair (low, high) of numbers; got {plain(score_bounds)!r}."
         ) from exc
     if not lo < hi:
-        raise ValueError(f"`score_bounds` must satisfy low < high; got {score_bounds!r}.")
+        raise ValueError(f"`score_bounds` must satisfy low < high; got {plain(score_bounds)!r}.")
     return lo, hi
 
 
@@ -129,9 +135,11 @@ def _binary_targets(y: Any, n: int) -> np.ndarray:
     if arr.dtype.kind == "b":
         arr = arr.astype(np.int8)
     if arr.dtype.kind not in "iuf" or not np.all((arr == 0) | (arr == 1)):
+        # (a set, not np.unique: labels of mixed types cannot be sorted)
+        seen = sorted({repr(plain(v)) for v in arr.tolist()})[:5]
         raise ValueError(
             "`y` must hold binary targets coded 0 (negative) and 1 (positive); got values "
-            f"{np.unique(arr)[:5].tolist()}."
+            f"{', '.join(seen)}."
         )
     return arr.astype(np.intp)
 
@@ -153,7 +161,8 @@ def _beyond(x: float, step: float, direction: float) -> float:
         for cand in (x + direction * step, x + direction * max(abs(x), 1.0)):
             if np.isfinite(cand) and (cand - x) * direction > 0:
                 return float(cand)
-    return float(np.nextafter(x, direction * np.inf))
+    with np.errstate(over="ignore"):  # beyond the largest double: +-inf is the only choice
+        return float(np.nextafter(x, direction * np.inf))
 
 
 class _SortedRows:
@@ -272,7 +281,9 @@ def _pick_optimum(
         c = np.where(admissible, cost, np.inf)
         scale = float(np.max(np.abs(cost[admissible])))
     best = c.min()
-    tol = 1e-9 * max(scale, 1e-300)
+    # relative tie tolerance; no absolute floor, which would tie genuinely different costs when
+    # all costs are tiny (costs of 1e-300, or a large cost matrix whose big entries never apply)
+    tol = 1e-9 * scale
     opt = np.flatnonzero(c <= best + tol)
     breaks = np.flatnonzero(np.diff(opt) > 1)
     starts = opt[np.concatenate([[0], breaks + 1])]
@@ -362,7 +373,12 @@ def search_cutoff(
     res = _search_rows(
         s, _RowCosts(matrix, yi, w), check_capacity(capacity), _check_bounds(score_bounds)
     )
-    return replace(res, cost=res.cost * unit, costs=res.costs * unit)
+    # mean costs never exceed the largest cost entry; scaling back can pass the largest double
+    # only by rounding (a mean of costs at the top of the range)
+    big = np.finfo(float).max
+    with np.errstate(over="ignore"):
+        costs_back = np.clip(res.costs * unit, -big, big)
+    return replace(res, cost=float(np.clip(res.cost * unit, -big, big)), costs=costs_back)
 
 
 def _search_rows(s, row_costs: _RowCosts, cap, bounds) -> CutoffSearchResult:
@@ -469,19 +485,24 @@ def cutoff_interval(
     cap = check_capacity(capacity)
     bounds = _check_bounds(score_bounds)
     if int(n_resamples) < 1:
-        raise ValueError(f"`n_resamples` must be a positive integer; got {n_resamples!r}.")
+        raise ValueError(f"`n_resamples` must be a positive integer; got {plain(n_resamples)!r}.")
     if not 0.0 < float(confidence_level) < 1.0:
-        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {plain(confidence_level)!r}.")
     from sklearn.utils import check_random_state
 
     rng = check_random_state(random_state)
-    rows = _SortedRows(s, bounds)
-    n = s.shape[0]
-    rc = _RowCosts(matrix, yi, w)
-    w1 = np.ones(n) if w is None else w
-    d_sorted = ((rc.c0 - rc.c1) * w1)[rows.order]
-    c1w_sorted = (rc.c1 * w1)[rows.order]
-    w_sorted = w1[rows.order]
+    w1 = np.ones(s.shape[0]) if w is None else w
+    # Weights are frequencies: a row of weight zero is absent, so resamples draw from the rows
+    # of positive weight only (a resample of zero-weight rows alone would have no cost curve).
+    present = np.flatnonzero(w1 > 0)
+    n = present.shape[0]
+    rows = _SortedRows(s[present], bounds)
+    rc = _RowCosts(matrix if matrix.ndim == 2 else matrix[present], yi[present],
+                   None if w is None else w[present])
+    wp = w1[present]
+    d_sorted = ((rc.c0 - rc.c1) * wp)[rows.order]
+    c1w_sorted = (rc.c1 * wp)[rows.order]
+    w_sorted = wp[rows.order]
     found = np.empty(int(n_resamples))
     for b in range(int(n_resamples)):
         # a row drawn c times gets c times its weight; counts are put in score order directly

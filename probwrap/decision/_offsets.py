@@ -18,7 +18,13 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_labels, check_same_length, check_sample_weight, power_of_two_unit
+from .._validation import (
+    check_labels,
+    check_same_length,
+    check_sample_weight,
+    plain,
+    power_of_two_unit,
+)
 from ._bayes import _check_proba_2d
 from ._costs import _resolve_costs
 from ._cutoff import _pick_optimum
@@ -295,7 +301,7 @@ def class_offset_curve(
     b = _check_offsets(offsets, p.shape[1])
     j = int(class_index)
     if not 0 <= j < p.shape[1]:
-        raise ValueError(f"`class_index` must be in [0, {p.shape[1]}); got {class_index!r}.")
+        raise ValueError(f"`class_index` must be in [0, {p.shape[1]}); got {plain(class_index)!r}.")
     curve = _sweep(p, yi, matrix, w, b, j)
     return replace(curve, costs=curve.costs * unit)
 
@@ -344,7 +350,7 @@ def tune_class_offsets(
     """
     p, yi, matrix, w, unit = _prepare(proba, y, costs, sample_weight)
     if int(max_sweeps) < 1:
-        raise ValueError(f"`max_sweeps` must be a positive integer; got {max_sweeps!r}.")
+        raise ValueError(f"`max_sweeps` must be a positive integer; got {plain(max_sweeps)!r}.")
     k = p.shape[1]
     b = np.zeros(k)
     cost = _mean_cost(p, yi, matrix, w, b)

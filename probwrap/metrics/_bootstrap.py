@@ -59,6 +59,33 @@ def _scalar_or_array(values: np.ndarray) -> float | np.ndarray:
     return float(values) if values.ndim == 0 else values
 
 
+def _weights_act_as_copies(metric, y, p, base_w, n, metric_kwargs) -> bool:
+    """Whether ``metric`` gives the same value for a resample passed as weights and as copies.
+
+    Checked on up to three fixed probe resamples (a seeded generator of its own, so the user's
+    resamples are unchanged). A probe on which either form raises ``ValueError`` (for example a
+    class missing from the copied rows) is inconclusive; if none is conclusive, weights are used.
+    """
+    probe = np.random.RandomState(20260)
+    for _ in range(3):
+        idx = probe.randint(0, n, size=n)
+        counts = np.bincount(idx, minlength=n)
+        if np.all(counts == 1):  # n == 1, or a permutation: nothing to tell apart
+            continue
+        try:
+            as_weights = np.asarray(metric(y, p, sample_weight=counts * base_w, **metric_kwargs),
+                                    dtype=float)
+            as_rows = np.asarray(metric(y[idx], p[idx], sample_weight=base_w[idx],
+                                        **metric_kwargs), dtype=float)
+        except ValueError:
+            continue
+        if as_weights.shape != as_rows.shape:
+            return False
+        # the two forms differ only by the order of floating-point sums
+        return bool(np.allclose(as_weights, as_rows, rtol=1e-7, atol=1e-12, equal_nan=True))
+    return True
+
+
 def bootstrap_interval(
     metric: Callable[..., Any],
     y_true: Any,
@@ -77,7 +104,9 @@ def bootstrap_interval(
     resample is handed to ``metric`` as weights, not as copied rows: a row drawn ``c`` times gets
     weight ``c * sample_weight``. Because every metric in :mod:`probwrap.metrics` treats weight
     ``c`` exactly as ``c`` copies, this equals evaluating the metric on the resampled rows, and it
-    keeps the full label set visible to the metric in every resample. Each row (with its weight)
+    keeps the full label set visible to the metric in every resample. For any other metric this
+    is first checked on a few probe resamples; a metric that ignores ``sample_weight`` or treats
+    it otherwise gets copied rows instead, with a ``UserWarning``. Each row (with its weight)
     is one resampling unit; weighted data are therefore resampled row by row, not in proportion
     to their weights.
 
@@ -152,16 +181,30 @@ def bootstrap_interval(
             "`metric` must return a finite number or 1-d array of finite numbers; got "
             f"{statistic!r}."
         )
+    copy_rows = not _weights_act_as_copies(metric, y_arr, p_arr, base_w, n, metric_kwargs)
+    if copy_rows:
+        warnings.warn(
+            "`metric` does not treat `sample_weight` as row frequencies (a resample passed as "
+            "weights gave another value than the same rows copied), so passing resamples as "
+            "weights would give a wrong, possibly zero-width interval; the rows are copied "
+            "instead (slower; a resample may then miss a class).",
+            UserWarning,
+            stacklevel=2,
+        )
     rng = check_random_state(random_state)
     dist = np.empty((int(n_resamples),) + statistic.shape)
     ok = np.ones(int(n_resamples), dtype=bool)
     first_error = None
     for r in range(int(n_resamples)):
-        counts = np.bincount(rng.randint(0, n, size=n), minlength=n)
+        idx = rng.randint(0, n, size=n)
         try:
-            value = np.asarray(
-                metric(y_arr, p_arr, sample_weight=counts * base_w, **metric_kwargs), dtype=float
-            )
+            if copy_rows:
+                w_rows = None if sample_weight is None else base_w[idx]
+                value = metric(y_arr[idx], p_arr[idx], sample_weight=w_rows, **metric_kwargs)
+            else:
+                counts = np.bincount(idx, minlength=n)
+                value = metric(y_arr, p_arr, sample_weight=counts * base_w, **metric_kwargs)
+            value = np.asarray(value, dtype=float)
         except ValueError as exc:
             ok[r] = False
             first_error = first_error or str(exc)

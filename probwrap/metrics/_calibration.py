@@ -10,6 +10,7 @@ import numpy as np
 from scipy.special import expit
 from sklearn.exceptions import ConvergenceWarning
 
+from .._validation import plain, power_of_two_unit
 from ..calibration._logodds import DEFAULT_CLIP, proba_to_log_odds
 from ._inputs import (
     check_n_bins,
@@ -365,8 +366,8 @@ def brier_decomposition(
 
     With ``n_bins``, rows are grouped into bins (``strategy`` as in
     :func:`expected_calibration_error`) and each bin's mean forecast stands in for its forecasts.
-    The three terms then no longer add up to the score; the two within-bin terms of Stephenson
-    et al. (2008) close the gap exactly:
+    The three terms then no longer add up to the score; the two within-bin terms of Stephenson,
+    Coelho & Jolliffe (2008, Weather and Forecasting 23:752-757) close the gap exactly:
     ``brier = reliability - resolution + uncertainty + within_bin_variance - within_bin_covariance``
     where ``within_bin_variance = sum_i w_i (p_i - pbar_b(i))^2 / W`` and
     ``within_bin_covariance = 2 sum_i w_i (p_i - pbar_b(i)) (y_i - ybar_b(i)) / W``.
@@ -546,7 +547,7 @@ def calibration_slope_intercept(
     """
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
     if not (isinstance(clip, (int, float)) and 0.0 < clip < 0.5):
-        raise ValueError(f"`clip` must be a number in (0, 0.5); got {clip!r}.")
+        raise ValueError(f"`clip` must be a number in (0, 0.5); got {plain(clip)!r}.")
     pos = (y == 1.0) & (w > 0)
     neg = (y == 0.0) & (w > 0)
     if not pos.any() or not neg.any():
@@ -564,6 +565,9 @@ def calibration_slope_intercept(
         )
     keep = w > 0
     xk, yk, wk = x[keep], y[keep], w[keep]
+    # frequency weights enter the likelihood as a common factor: divided by a power of two
+    # (exact) near their largest, denormal or huge weights give a well-conditioned Newton step
+    wk = wk / power_of_two_unit(wk)
     beta_s, it_s = _newton_logistic(xk, yk, wk, fit_slope=True)
     beta_i, it_i = _newton_logistic(xk, yk, wk, fit_slope=False)
     return CalibrationSlopeIntercept(

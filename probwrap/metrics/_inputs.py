@@ -16,10 +16,12 @@ import numpy as np
 
 from .._validation import (
     check_binary_labels,
+    check_label_types,
     check_labels,
     check_proba,
     check_same_length,
     check_sample_weight,
+    plain,
 )
 
 __all__ = [
@@ -46,6 +48,7 @@ def _label_array(y_true: Any) -> np.ndarray:
         raise ValueError("`y_true` is empty; at least one row is needed.")
     if arr.dtype.kind == "f" and np.isnan(arr).any():
         raise ValueError("`y_true` contains NaN; labels must be known for every row.")
+    check_label_types(arr, "y_true")
     return arr
 
 
@@ -163,7 +166,7 @@ def prepare_any(
 
 def check_n_bins(n_bins: Any, name: str = "n_bins") -> int:
     if isinstance(n_bins, bool) or not isinstance(n_bins, numbers.Integral) or n_bins < 1:
-        raise ValueError(f"`{name}` must be a whole number >= 1; got {n_bins!r}.")
+        raise ValueError(f"`{name}` must be a whole number >= 1; got {plain(n_bins)!r}.")
     return int(n_bins)
 
 

@@ -9,7 +9,8 @@ prior estimators accept through their ``sample_weight``.
 The core of this module needs only NumPy; Dask is imported only when Dask input is given.
 """
 
-from ._tally import DEFAULT_RESOLUTION, ScoreTally, merge_tallies, tally_scores
+from ._build import tally_scores
+from ._tally import DEFAULT_RESOLUTION, ScoreTally, merge_tallies
 
 __all__ = ["DEFAULT_RESOLUTION", "ScoreTally", "merge_tallies", "tally_scores", "tally_model"]
 

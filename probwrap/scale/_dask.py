@@ -55,8 +55,18 @@ def _row_blocks(X: Any) -> tuple[list, list | None]:
             lengths = None
         return blocks, lengths
     if hasattr(X, "npartitions") and hasattr(X, "to_delayed"):
-        return list(X.to_delayed()), None
+        return _partitions(X), None
     raise ValueError(f"`X` is a Dask collection of unsupported type {type(X).__name__}.")
+
+
+def _partitions(frame: Any) -> list:
+    """Delayed partitions of a Dask DataFrame or Series, as the collection defines them.
+
+    Without ``optimize_graph=False``, Dask's optimiser may combine partitions differently for
+    different column selections of one frame (reading fewer columns of a Parquet file gives
+    fewer, larger partitions), so ``df[features]`` and ``df["label"]`` would no longer line up.
+    """
+    return list(frame.to_delayed(optimize_graph=False))
 
 
 def _aligned_blocks(v: Any, name: str, X: Any, blocks: list, lengths: list | None) -> list:
@@ -66,11 +76,12 @@ def _aligned_blocks(v: Any, name: str, X: Any, blocks: list, lengths: list | Non
     dask, da = _import_dask()
     if is_dask_collection(v):
         if not _is_dask_array(v):
-            parts = list(v.to_delayed())
+            parts = _partitions(v)
             if len(parts) != len(blocks):
                 raise ValueError(
                     f"`{name}` has {len(parts)} partitions but `X` has {len(blocks)} blocks; "
-                    "they must be partitioned alike (e.g. columns of one Dask DataFrame)."
+                    "they must be partitioned alike: take both from one Dask DataFrame, or "
+                    f"with known divisions `{name}.repartition(divisions=X.divisions)`."
                 )
             return parts
         if lengths is None:
@@ -101,6 +112,20 @@ def _tree_merge(dask: Any, parts: list) -> Any:
             for i in range(0, len(parts), 2)
         ]
     return parts[0]
+
+
+def _persist(dask: Any, parts: list) -> list:
+    return list(dask.persist(*parts))
+
+
+def _reduce(dask: Any, fn, parts: list, *args) -> Any:
+    """Sum of ``fn(part, *args)`` over the blocks (small results only)."""
+    call = dask.delayed(fn, pure=True)
+    results = dask.compute(*[call(part, *args) for part in parts])
+    out = results[0]
+    for r in results[1:]:
+        out = tuple(a + b for a, b in zip(out, r, strict=True)) if isinstance(out, tuple) else out + r
+    return out
 
 
 def tally_dask_scores(
@@ -216,12 +241,12 @@ def owner_resolution(owner: Any) -> float:
 def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: str):
     """Held-out predictions of a frozen binary estimator on Dask rows, as tally rows.
 
-    The returned :class:`~probwrap._heldout.HeldOutPredictions` has one row per (bin, class)
+    The returned :class:`~probwrap._predictions.HeldOutPredictions` has one row per (bin, class)
     of the tally, weighted by the tallied weight; ``from_tally`` is set.
     """
     from sklearn.frozen import FrozenEstimator
 
-    from .._heldout import HeldOutPredictions
+    from .._predictions import HeldOutPredictions
 
     estimator = owner.estimator
     if not isinstance(estimator, FrozenEstimator):

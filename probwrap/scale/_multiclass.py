@@ -25,6 +25,8 @@ import numpy as np
 from scipy.stats import chi2
 from sklearn.exceptions import ConvergenceWarning
 
+from ._dask import _aligned_blocks, _import_dask, _persist, _reduce, _row_blocks
+
 __all__ = ["fit_multiclass_source", "estimate_multiclass_target"]
 
 _TINY = np.finfo(float).tiny
@@ -57,20 +59,6 @@ def _target_block(estimator, calibrator, Xb, wb):
     if w.shape[0] != p.shape[0] or not np.all(np.isfinite(w)) or np.any(w < 0):
         raise ValueError("`sample_weight` must be finite, non-negative and one per row.")
     return p, w
-
-
-def _persist(dask: Any, parts: list) -> list:
-    return list(dask.persist(*parts))
-
-
-def _reduce(dask: Any, fn, parts: list, *args) -> Any:
-    """Sum of ``fn(part, *args)`` over the blocks (small results only)."""
-    call = dask.delayed(fn, pure=True)
-    results = dask.compute(*[call(part, *args) for part in parts])
-    out = results[0]
-    for r in results[1:]:
-        out = tuple(a + b for a, b in zip(out, r, strict=True)) if isinstance(out, tuple) else out + r
-    return out
 
 
 # -- source side ------------------------------------------------------------------------------
@@ -119,7 +107,6 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
 
     from ..shift import PriorEstimator
     from ..shift._calibration import BiasCorrectedScaling, _newton
-    from ._dask import _aligned_blocks, _import_dask, _row_blocks
 
     dask, _ = _import_dask()
     estimator = owner.estimator
@@ -239,7 +226,6 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
     No interval (``interval=None``).
     """
     from ..shift import PriorEstimate, acc_prior, bbse_prior
-    from ._dask import _aligned_blocks, _import_dask, _row_blocks
 
     dask, _ = _import_dask()
     k = est.n_classes_
@@ -294,222 +280,3 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         shift_statistic=stat,
         shift_pvalue=float(chi2.sf(stat, k - 1)),
     )
-
-
-# -- CalibrationWrapper: temperature by reductions, binary maps one-vs-rest from tallies --------
-def _frozen_multiclass(owner: Any, y: Any) -> tuple[Any, np.ndarray]:
-    from sklearn.frozen import FrozenEstimator
-
-    estimator = owner.estimator
-    if not isinstance(estimator, FrozenEstimator):
-        raise ValueError(
-            "Dask input needs an already fitted estimator wrapped in "
-            "sklearn.frozen.FrozenEstimator; got " + type(estimator).__name__ + "."
-        )
-    if y is None:
-        raise ValueError(f"{type(owner).__name__} requires y to be passed, but the target y is None.")
-    return estimator, np.asarray(estimator.classes_)
-
-
-def _label_index(classes: np.ndarray, yb: Any) -> np.ndarray:
-    yb = np.asarray(yb).ravel()
-    pos = np.clip(np.searchsorted(classes, yb), 0, classes.shape[0] - 1)
-    bad = classes[pos] != yb
-    if np.any(bad):
-        raise ValueError(
-            f"`y` has labels {np.unique(yb[bad])[:5].tolist()} that the frozen estimator does "
-            f"not know; its classes are {classes.tolist()}."
-        )
-    return pos
-
-
-def _weights(wb: Any, n: int) -> np.ndarray:
-    w = np.ones(n) if wb is None else np.asarray(wb, dtype=float).ravel()
-    if w.shape[0] != n or not np.all(np.isfinite(w)) or np.any(w < 0):
-        raise ValueError("`sample_weight` must be finite, non-negative and one per row.")
-    return w
-
-
-def _wrapper_scores_block(owner, template, Xb, yb, wb):
-    values = getattr(owner.estimator_, owner.response_)(Xb)
-    scores = owner._to_scores(np.asarray(values, dtype=float))
-    return owner._map_input(template, scores), _label_index(owner.classes_, yb), _weights(
-        wb, scores.shape[0]
-    )
-
-
-def _temperature_terms(block, log_beta, total, counts=None):
-    from ..calibration._temperature import _loss_slope
-
-    s, y, w = block
-    return np.array([_loss_slope(log_beta, s, y, w / total, counts)])
-
-
-def _class_weight_terms(block, k):
-    _, y, w = block
-    return np.bincount(y, weights=w, minlength=k).astype(float)
-
-
-def _square_terms(block):
-    s, _, w = block
-    square = np.mean((s - s.mean(axis=1, keepdims=True)) ** 2, axis=1)
-    return np.array([w @ square, w.sum()])
-
-
-def _ovr_tallies_block(owner, resolution, Xb, yb, wb):
-    from ._tally import _tally_block
-
-    values = getattr(owner.estimator_, owner.response_)(Xb)
-    scores = owner._to_scores(np.asarray(values, dtype=float))
-    ovr = owner._one_vs_rest_scores(scores)
-    y = _label_index(owner.classes_, yb)
-    w = _weights(wb, scores.shape[0])
-    return [
-        _tally_block(ovr[:, j], (y == j).astype(int), w, 2, resolution)
-        for j in range(ovr.shape[1])
-    ]
-
-
-def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, template: Any):
-    """Fit ``owner.calibrator_`` (a CalibrationWrapper) from labelled multiclass Dask rows.
-
-    Temperature scaling: the root of the loss slope in ``log(1 / T)`` found by Brent's method
-    on the same bracket as in memory, every slope evaluation one reduction over the persisted
-    score blocks. Binary maps: one-vs-rest score tallies (one per class, from one pass), each
-    map fitted on its tally's weighted rows.
-    """
-    from scipy.optimize import brentq
-    from sklearn.base import clone
-
-    from .._heldout import _resolve_response
-    from ..calibration._temperature import _LOG_SPAN, TemperatureMap
-    from ._dask import _aligned_blocks, _import_dask, _row_blocks, _tree_merge, owner_resolution
-
-    dask, _ = _import_dask()
-    estimator, classes = _frozen_multiclass(owner, y)
-    k = classes.shape[0]
-    owner.estimator_ = estimator
-    owner.classes_ = classes
-    owner.response_ = _resolve_response(estimator, owner._heldout_response)
-    if hasattr(estimator, "n_features_in_"):
-        owner.n_features_in_ = estimator.n_features_in_
-    if hasattr(estimator, "feature_names_in_"):
-        owner.feature_names_in_ = estimator.feature_names_in_
-    blocks, lengths = _row_blocks(X)
-    ys = _aligned_blocks(y, "y", X, blocks, lengths)
-    ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
-    if isinstance(template, TemperatureMap):
-        make = dask.delayed(_wrapper_scores_block, pure=True)
-        parts = _persist(
-            dask, [make(owner, template, b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
-        )
-        try:
-            sq, total = _reduce(dask, _square_terms, parts)
-            if total <= 0:
-                raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
-            cal = clone(template)
-            cal.classes_ = np.arange(k)
-            cal.n_classes_ = k
-            cal.n_score_columns_ = k
-            scale = float(np.sqrt(sq / total))
-            if scale == 0.0:
-                cal.temperature_ = 1.0
-                return cal
-            lo, hi = -np.log(scale) - _LOG_SPAN, -np.log(scale) + _LOG_SPAN
-            counts = None
-            if template.smooth_targets:
-                # smoothed targets need the weighted class counts (see TemperatureMap)
-                counts = _reduce(dask, _class_weight_terms, parts, k)
-                cal.floor_ = float(1.0 / (total + k))
-
-            def slope(log_beta: float) -> float:
-                return float(_reduce(dask, _temperature_terms, parts, log_beta, total, counts)[0])
-
-            if slope(lo) >= 0 or slope(hi) <= 0:
-                log_beta = lo if slope(lo) >= 0 else hi
-                warnings.warn(
-                    "TemperatureMap: the best temperature lies at the end of the search range; "
-                    "the scores are either unrelated to the labels or separate the classes "
-                    "perfectly.",
-                    UserWarning,
-                    stacklevel=3,
-                )
-            else:
-                log_beta = brentq(slope, lo, hi, xtol=1e-14, rtol=1e-15)
-            cal.temperature_ = float(np.exp(-float(log_beta)))
-            return cal
-        finally:
-            parts.clear()
-    if getattr(template, "supports_multiclass", False):
-        raise ValueError(
-            f"{type(template).__name__} is not supported for multiclass Dask input; use "
-            "'temperature' or a binary map (fitted one-vs-rest)."
-        )
-    make = dask.delayed(_ovr_tallies_block, pure=True)
-    resolution = owner_resolution(owner)
-    per_block = [
-        make(owner, resolution, b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)
-    ]
-    pick = dask.delayed(lambda ts, j: ts[j], pure=True)
-    merged = dask.compute(
-        *[_tree_merge(dask, [pick(t, j) for t in per_block]) for j in range(k)]
-    )
-    if merged[0].total_weight <= 0:
-        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
-    maps: list = []
-    for tally in merged:
-        pos = tally.label_weight[1]
-        if pos <= 0 or pos >= tally.total_weight:
-            maps.append(float(pos > 0))
-            continue
-        s, yk, wk = tally.to_rows()
-        maps.append(clone(template).fit(owner._map_input(template, s), yk, sample_weight=wk))
-    if any(isinstance(m, float) for m in maps):
-        warnings.warn(
-            "Some classes have no held-out rows; their calibrated probability is set to 0.",
-            UserWarning,
-            stacklevel=3,
-        )
-    owner.tally_ = list(merged)
-    return maps
-
-
-# -- CostPolicyWrapper: held-out cost of a fixed rule -----------------------------------------
-def _cost_block(policy, Xb, yb, wb):
-    proba = policy.estimator_.predict_proba(Xb)
-    y = _label_index(policy.classes_, yb)
-    w = _weights(wb, proba.shape[0])
-    costs = policy._costs_for(Xb)
-    chosen = policy._decide(proba, costs)
-    if costs.ndim == 2:
-        realised = costs[y, chosen]
-    else:
-        realised = costs[np.arange(chosen.shape[0]), y, chosen]
-    return np.array([w @ realised, w.sum()])
-
-
-def first_block_row_costs(policy: Any, X: Any, k: int) -> np.ndarray:
-    """``costs(X)`` of the first Dask block (validated), to learn the number of actions."""
-    from ._dask import _import_dask, _row_blocks
-
-    dask, _ = _import_dask()
-    blocks, _ = _row_blocks(X)
-    return dask.delayed(policy._row_costs, pure=True)(blocks[0], k).compute()
-
-
-def heldout_cost_dask(policy: Any, X: Any, y: Any, sample_weight: Any) -> float:
-    """Weighted mean realised cost of a fitted policy's actions on labelled Dask rows."""
-    from ._dask import _aligned_blocks, _import_dask, _row_blocks
-
-    dask, _ = _import_dask()
-    if y is None:
-        raise ValueError(f"{type(policy).__name__} requires y to be passed, but the target y is None.")
-    blocks, lengths = _row_blocks(X)
-    ys = _aligned_blocks(y, "y", X, blocks, lengths)
-    ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
-    parts = [(b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
-    call = dask.delayed(_cost_block, pure=True)
-    sums = np.sum(dask.compute(*[call(policy, *part) for part in parts]), axis=0)
-    if sums[1] <= 0:
-        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
-    return float(sums[0] / sums[1])

@@ -106,7 +106,15 @@ def adjust_to_prior(proba: Any, source_prior: Any, target_prior: Any) -> np.ndar
     k = p.shape[1]
     src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
     tgt = check_prior(target_prior, k, name="target_prior")
-    num = p * (tgt / src)
+    with np.errstate(over="ignore"):
+        ratio = tgt / src
+    if not np.all(np.isfinite(ratio)):
+        # a source prior near the smallest double overflows tgt / src; each row is normalised,
+        # so the ratios may be divided by their largest, computed on the log scale
+        with np.errstate(divide="ignore"):
+            log_ratio = np.log(tgt) - np.log(src)
+        ratio = np.exp(log_ratio - log_ratio.max())
+    num = p * ratio
     den = num.sum(axis=1, keepdims=True)
     empty = den[:, 0] <= 0
     if empty.any():
@@ -177,7 +185,11 @@ def shift_cutoff(cutoff: Any, source_prior: Any, target_prior: Any) -> np.ndarra
     pt = _as_binary_prior(target_prior, "target_prior")
     ratio = (pt / (1.0 - pt)) / (ps / (1.0 - ps))
     # t' = t / (t + r (1 - t)): the odds form above, written so that 0 and 1 stay finite.
-    moved = t / (t + ratio * (1.0 - t))
+    with np.errstate(over="ignore", invalid="ignore"):
+        moved = t / (t + ratio * (1.0 - t))
+    # an odds ratio that over- or underflows (a prior near the smallest double) gives inf * 0
+    # or 0 / 0 at the ends; 0 and 1 stay where they are
+    moved = np.where(t <= 0.0, 0.0, np.where(t >= 1.0, 1.0, moved))
     return float(moved) if moved.ndim == 0 else moved
 
 

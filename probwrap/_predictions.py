@@ -1,0 +1,79 @@
+"""What held-out prediction produces: the container and the choice of response method.
+
+A lower module shared by the held-out helper (``probwrap._heldout``) and the Dask path
+(``probwrap.scale``): the held-out helper calls into the Dask path, which needs nothing back from it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+__all__ = ["HeldOutPredictions", "resolve_response"]
+
+_RESPONSES = ("predict_proba", "decision_function", "auto")
+
+
+@dataclass
+class HeldOutPredictions:
+    """Held-out predictions of an inner estimator, with what is needed to use them.
+
+    Attributes
+    ----------
+    values : ndarray
+        ``predict_proba`` output of shape (n, k) in ``classes`` order, or ``decision_function``
+        output of shape (n,) (binary) or (n, k).
+    response : str
+        ``"predict_proba"`` or ``"decision_function"``.
+    classes : ndarray of shape (k,)
+        Class labels, in the order of the columns of ``values``.
+    y_index : ndarray of shape (n,)
+        Index of each row's label in ``classes``.
+    sample_weight : ndarray of shape (n,)
+        Validated row weights (ones when none were given).
+    fold : ndarray of shape (n,)
+        Fold whose model predicted each row; ``-1`` for every row of a frozen estimator.
+    n_folds : int
+        Number of folds; 0 for a frozen estimator.
+    estimator : estimator
+        The final fitted estimator (the frozen one as given, or a clone fitted on all rows).
+    """
+
+    values: np.ndarray
+    response: str
+    classes: np.ndarray
+    y_index: np.ndarray
+    sample_weight: np.ndarray
+    fold: np.ndarray
+    n_folds: int
+    estimator: Any
+    #: True when the rows are the (bin, class) rows of a score tally (Dask input), whose weights
+    #: are tallied row counts: resampling them would not resample the original rows.
+    from_tally: bool = False
+
+
+def resolve_response(estimator: Any, response: str) -> str:
+    if response not in _RESPONSES:
+        raise ValueError(f"`response` must be one of {_RESPONSES}; got {response!r}.")
+    has_proba = hasattr(estimator, "predict_proba")
+    has_decision = hasattr(estimator, "decision_function")
+    if response == "auto":
+        if has_proba:
+            return "predict_proba"
+        if has_decision:
+            return "decision_function"
+        raise ValueError(
+            f"`estimator` ({type(estimator).__name__}) has neither predict_proba nor "
+            "decision_function; a probabilistic or scoring classifier is needed."
+        )
+    if response == "predict_proba" and not has_proba:
+        raise ValueError(
+            f"`estimator` ({type(estimator).__name__}) has no predict_proba; this wrapper needs "
+            "probabilities. Wrap it in CalibrationWrapper first, which also accepts "
+            "decision_function scores."
+        )
+    if response == "decision_function" and not has_decision:
+        raise ValueError(f"`estimator` ({type(estimator).__name__}) has no decision_function.")
+    return response
