@@ -22,6 +22,7 @@ from .calibration._isotonic import IsotonicMap
 from .calibration._logodds import DEFAULT_CLIP
 from .calibration._platt import PlattMap
 from .calibration._temperature import TemperatureMap
+from .calibration._vector_scaling import MatrixScalingMap, VectorScalingMap
 from .calibration._venn_abers import VennAbersMap
 
 __all__ = ["CalibrationWrapper", "CALIBRATION_METHODS"]
@@ -34,7 +35,17 @@ CALIBRATION_METHODS: dict[str, type[CalibrationMap]] = {
     "binning": BinningMap,
     "isotonic": IsotonicMap,
     "venn_abers": VennAbersMap,
+    "vector_scaling": VectorScalingMap,
+    "matrix_scaling": MatrixScalingMap,
 }
+
+#: Candidates of ``method="auto"`` that compete only for multiclass models: on binary log-odds
+#: vector scaling is Platt scaling with a shrunken intercept.
+_AUTO_MULTICLASS_ONLY = ("vector_scaling",)
+
+#: Methods that ``method="auto"`` leaves out unless named in ``candidates``: matrix scaling has
+#: k^2 + k - 1 parameters and needs many rows per class.
+_AUTO_EXCLUDED_BY_DEFAULT = ("matrix_scaling",)
 
 #: ``method="auto"`` keeps Venn-Abers among its default candidates only while the number of
 #: held-out rows times the number of binary maps (1, or k one-vs-rest) stays below this.
@@ -94,7 +105,9 @@ class CalibrationWrapper(HeldOutClassifierBase):
         passed to :meth:`fit` then counts as held-out data.
     method : str or CalibrationMap, default="auto"
         ``"platt"``, ``"isotonic"``, ``"beta"``, ``"temperature"``, ``"binning"``,
-        ``"venn_abers"``, a map instance (cloned before fitting), or ``"auto"``. ``"auto"`` scores
+        ``"venn_abers"``, ``"vector_scaling"``, ``"matrix_scaling"`` (the last two multiclass
+        maps, see :class:`~probwrap.calibration.VectorScalingMap`), a map instance (cloned
+        before fitting), or ``"auto"``. ``"auto"`` scores
         every candidate map by cross-validated log loss on the held-out predictions and keeps the
         simplest map whose loss is within one standard error (of the paired per-row difference)
         of the best one, so a richer map must win by more than its cross-validation noise. A
@@ -110,7 +123,9 @@ class CalibrationWrapper(HeldOutClassifierBase):
     random_state : int, RandomState or None, default=None
         Shuffling of the folds.
     candidates : sequence of str, default=None
-        Maps that ``"auto"`` chooses from. Default: all six, except that Venn–Abers is a
+        Maps that ``"auto"`` chooses from. Default: all methods except matrix scaling (which
+        needs many rows per class), with vector scaling for multiclass models only (on binary
+        log-odds it is Platt scaling); Venn–Abers is a
         candidate only while the held-out rows times the number of binary maps (1 for two
         classes, k one-vs-rest) stay below 1,000: it costs one to two orders of magnitude more
         to cross-validate than the others, and beyond small sets its merged probability agrees
@@ -486,6 +501,10 @@ class CalibrationWrapper(HeldOutClassifierBase):
     def _auto_names(self, n_rows: int, n_maps: int = 1) -> list[str]:
         """The candidates ``"auto"`` scores, in the order given (see ``candidates``)."""
         names = self._candidate_names()
+        if self.candidates is None:
+            names = [n for n in names if n not in _AUTO_EXCLUDED_BY_DEFAULT]
+            if n_maps == 1:  # binary
+                names = [n for n in names if n not in _AUTO_MULTICLASS_ONLY]
         if self.candidates is None and n_rows * n_maps >= _VENN_ABERS_AUTO_MAX_ROWS:
             # Venn-Abers costs one to two orders of magnitude more to cross-validate than the
             # other maps (one hull-bridging search per insertion point and label, per class
