@@ -17,6 +17,16 @@ from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
 __all__ = ["PriorShiftWrapper"]
 
 
+def _tally_rows(tally: Any) -> float:
+    """Effective number of the rows behind a tally (its bins' weights are counts of rows).
+
+    Kish's count when the tally knows the sum of squared weights, otherwise its total weight
+    (exact for unit weights).
+    """
+    rows = tally.effective_rows
+    return float(rows) if np.isfinite(rows) else float(tally.total_weight)
+
+
 class PriorShiftWrapper(HeldOutClassifierBase):
     """Correct a classifier's probabilities for a change of class priors (prior / label shift).
 
@@ -29,9 +39,17 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     :class:`~sklearn.frozen.FrozenEstimator`), records the weighted class frequencies
     (``source_prior_``), fits a bias-corrected calibration on the held-out posteriors and
     records their confusion matrix. ``adapt(X)`` estimates the class priors of unlabelled rows.
-    ``predict_proba`` then returns the calibrated posteriors re-weighted to the new priors —
-    to ``target_prior`` when it is given, otherwise to the priors found by ``adapt``. With
-    neither it returns the estimator's probabilities unchanged.
+
+    ``predict_proba`` always returns the calibrated posteriors (``calibrator_``; the
+    estimator's own probabilities with ``calibration=None``), re-weighted to the prior in use,
+    ``applied_prior_``: ``target_prior`` when it is given; otherwise, after ``adapt``, the
+    source prior moved toward the estimate ``target_prior_`` by the share the evidence
+    supports, ``adaptation_weight_ = max(0, 1 - min_evidence * (k - 1) / shift_statistic_)``
+    — nothing at all while the shift test's statistic stays below ``min_evidence * (k - 1)``;
+    before any ``adapt`` the source prior, which leaves the calibrated posteriors exactly as
+    they are. So ``target_prior`` equal to
+    ``source_prior_`` returns exactly what the wrapper returns without a target, and ``adapt``
+    never switches the calibration, only the prior.
 
     The correction is only as good as the prior-shift assumption: if what changed is how the
     features relate to the outcome (a new product, a new measuring device), re-weighting priors
@@ -48,10 +66,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         dict keyed by class label, or (binary only) a float, the prevalence of ``classes_[1]``.
         When given it takes precedence over the priors estimated by ``adapt``.
     method : {"em", "bbse", "bbse_soft", "acc", "pacc"}, default="em"
-        How ``adapt`` estimates the priors: maximum likelihood by EM (Saerens et al. 2002),
-        black-box shift estimation with the hard or soft confusion matrix (Lipton, Wang & Smola
-        2018), adjusted classify-and-count (Forman 2008) or its probabilistic form (Bella et al.
-        2010). See :mod:`probwrap.shift`.
+        How ``adapt`` estimates the priors: the likelihood of Saerens et al. (2002), shrunk
+        toward the source prior by ``prior_strength``, black-box shift estimation with the hard
+        or soft confusion matrix (Lipton, Wang & Smola 2018), adjusted classify-and-count
+        (Forman 2008) or its probabilistic form (Bella et al. 2010). See :mod:`probwrap.shift`.
     calibration : {"bcts", "vector", None}, default="bcts"
         Calibration fitted on the held-out posteriors before estimating and adjusting:
         bias-corrected temperature scaling or vector scaling (Alexandari, Kundaje & Shrikumar
@@ -60,9 +78,29 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         Bootstrap resamples for ``target_prior_interval_`` (0: no interval).
     confidence_level : float, default=0.95
     em_tol : float, default=1e-6
-        EM tolerance: stop when no prior moves by more than this in one step.
+        Largest accepted distance of the estimate to the exact optimum (certified, see
+        :func:`probwrap.shift.em_prior`).
     em_max_iter : int, default=1000
-        EM iteration cap; reaching it warns (ConvergenceWarning).
+        Iteration cap; reaching it warns (ConvergenceWarning) with the distance reached.
+    prior_strength : float, default=20.0
+        ``method="em"``: pseudo-rows of a Dirichlet prior centred on the source prior; the
+        estimate is its MAP (0: plain maximum likelihood).
+    min_evidence : float, default=2.0
+        How much evidence of a shift ``adapt`` needs before it moves the predictions, and how
+        far it moves them: with ``T = shift_statistic_`` (chi-square with ``k - 1`` degrees of
+        freedom under no shift) the applied prior is ``source + w (estimate - source)`` with
+        ``w = max(0, 1 - min_evidence (k - 1) / T)``. For an estimate ``X`` of a change
+        ``theta`` with standard error ``s``, ``theta^2 / (theta^2 + s^2)`` is the fraction of
+        ``X`` with the least squared error; ``w`` estimates it with ``theta^2 = X^2 - c s^2``
+        (``c = 1``: the plug-in of Thompson 1968 / positive-part James-Stein; the default 2
+        guards against the skewed estimates of weakly separating models and was chosen in
+        ``benchmarks/shift.py``). For two classes nothing moves while ``T <= 2`` (p >= 0.16).
+        0 applies the estimate as it is (``prior_strength=0, min_evidence=0`` is the plain
+        maximum-likelihood correction of Saerens et al. 2002).
+    interval : {"score", "bca", "percentile"}, default="score"
+        How ``target_prior_interval_`` is built: the inverted two-sample score test (two
+        classes; no resampling), or a BCa / percentile bootstrap of ``n_resamples`` Poisson
+        resamples of both samples (see :class:`probwrap.shift.PriorEstimator`).
     cv : int, splitter or iterable, default=5
         Cross-fitting folds (ignored for a frozen estimator).
     n_jobs : int, default=None
@@ -92,11 +130,26 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     target_prior_ : ndarray of shape (n_classes,)
         Priors estimated by the last ``adapt`` (set by ``adapt`` only).
     target_prior_interval_ : ndarray of shape (n_classes, 2) or None
-        Bootstrap interval of ``target_prior_`` (set by ``adapt``).
+        Interval of the class priors of the ``adapt`` rows, carrying the error of both the
+        unlabelled and the labelled rows (set by ``adapt``; see ``interval``).
     shift_pvalue_ : float
-        p-value of the likelihood-ratio test of "no shift" on the ``adapt`` rows.
+        p-value of the two-sample score test of "no shift" (the ``adapt`` rows against the
+        labelled rows; :func:`probwrap.shift.shift_score_test`).
     shift_statistic_ : float
         Its statistic (chi-square with ``n_classes - 1`` degrees of freedom under no shift).
+    shift_detected_ : bool
+        Whether ``adapt`` moved the prior at all (``adaptation_weight_ > 0``).
+    adaptation_weight_ : float
+        The share ``w`` of the way from the source prior to the estimate that was applied
+        (0 when the estimator could not identify the priors).
+    applied_prior_ : ndarray of shape (n_classes,)
+        The prior ``predict_proba`` re-weights to (``source_prior_`` means: no change).
+    n_dropped_resamples_ : int
+        Bootstrap resamples dropped by the last ``adapt`` (a class vanished from the labelled
+        resample); a warning says so when it is not 0.
+    prior_estimate_ : probwrap.shift.PriorEstimate
+        The full record of the last ``adapt`` (maximum-likelihood prior, certified distance to
+        the optimum, whether the estimator could identify the priors, ...).
 
     Examples
     --------
@@ -128,6 +181,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         confidence_level: float = 0.95,
         em_tol: float = 1e-6,
         em_max_iter: int = 1000,
+        prior_strength: float = 20.0,
+        min_evidence: float = 2.0,
+        interval: str = "score",
         cv: Any = 5,
         n_jobs: int | None = None,
         random_state: Any = None,
@@ -141,6 +197,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.confidence_level = confidence_level
         self.em_tol = em_tol
         self.em_max_iter = em_max_iter
+        self.prior_strength = prior_strength
+        self.min_evidence = min_evidence
+        self.interval = interval
         self.cv = cv
         self.n_jobs = n_jobs
         self.random_state = random_state
@@ -154,6 +213,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             raise ValueError(
                 f"`calibration` must be one of {CALIBRATIONS}; got {self.calibration!r}."
             )
+        c = self.min_evidence
+        if not (isinstance(c, numbers.Real) and not isinstance(c, bool) and np.isfinite(c)
+                and c >= 0):
+            raise ValueError(f"`min_evidence` must be a finite number >= 0; got {c!r}.")
 
     def _resolve_target_prior(self) -> np.ndarray | None:
         prior = self.target_prior
@@ -221,8 +284,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             n_resamples=self.n_resamples,
             confidence_level=self.confidence_level,
             random_state=self.random_state,
+            prior_strength=self.prior_strength,
+            interval=self.interval,
         )
-        est.fit(ho.values, ho.y_index, ho.sample_weight)
+        rows = _tally_rows(self.tally_) if ho.from_tally else None
+        est.fit(ho.values, ho.y_index, ho.sample_weight, effective_rows=rows)
         self._source_tally = self.tally_ if ho.from_tally else None
         return self._finish_fit(est)
 
@@ -232,14 +298,23 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.confusion_matrix_ = est.confusion_
         self.calibrator_ = est.calibrator_
         self.known_prior_ = self._resolve_target_prior()
-        for name in ("target_prior_", "target_prior_interval_", "shift_pvalue_", "shift_statistic_"):
+        for name in ("target_prior_", "target_prior_interval_", "shift_pvalue_", "shift_statistic_",
+                     "shift_detected_", "n_dropped_resamples_", "prior_estimate_",
+                     "adaptation_weight_"):
             if hasattr(self, name):
                 delattr(self, name)
+        self.applied_prior_ = (
+            self.source_prior_.copy() if self.known_prior_ is None else self.known_prior_.copy()
+        )
         return self
 
     def _dask_replicates(self) -> int:
-        """Bootstrap replicates to tally on Dask input (for ``target_prior_interval_``)."""
-        return int(self.n_resamples)
+        """Bootstrap replicates to tally on Dask input (for ``target_prior_interval_``).
+
+        None for the score interval: it is computed from the tallies themselves, so a Dask
+        fit pays for no replicates unless a bootstrap interval is asked for.
+        """
+        return 0 if self.interval == "score" else int(self.n_resamples)
 
     # -- adaptation ------------------------------------------------------------------------------
     def _check_features(self, X: Any, what: str) -> None:
@@ -295,33 +370,67 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             )
         else:
             proba = self._inner_output(X, "predict_proba")
-        poisson = est.n_resamples > 0 and (source is not None or target is not None)
+        poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
+            self.interval == "score" and not multiclass
+        )
         if poisson:
             # Some rows are tallied: one Poisson bootstrap over tallied and in-memory rows alike.
-            import copy
-
             from ._validation import check_sample_weight
             from .scale._bootstrap import tally_prior_interval
             from .scale._tally import replicate_seed
+            from .shift._estimator import _widen
 
-            point_est = copy.copy(est)
-            point_est.n_resamples = 0
-            res = point_est.estimate(proba, sample_weight, random_state=rs)
+            rows = None if target is None else _tally_rows(target)
+            res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
+                               interval=False)
             w = check_sample_weight(sample_weight, np.asarray(proba).shape[0])
-            interval = tally_prior_interval(
-                est, source, np.asarray(proba, dtype=float), w, target, res.prior,
-                n_replicates=est.n_resamples, seed=replicate_seed(rs),
-            )
+            centre = res.ml_prior if res.ml_prior is not None else res.prior
+            if res.identified:
+                interval = tally_prior_interval(
+                    est, source, np.asarray(proba, dtype=float), w, target, centre,
+                    n_replicates=est.n_resamples, seed=replicate_seed(rs),
+                )
+                n_eff = rows if rows is not None else float(w.sum() ** 2 / np.dot(w, w))
+                interval = _widen(interval, res.prior, centre, n_eff, est.confidence_level)
+            else:
+                k = self.classes_.shape[0]
+                interval = np.column_stack([np.zeros(k), np.ones(k)])
+            dropped = getattr(est, "_last_dropped", 0)
+            from dataclasses import replace
+
+            res = replace(res, interval=interval, n_dropped=dropped)
         else:
-            res = est.estimate(proba, sample_weight, random_state=rs)
+            rows = None if target is None else _tally_rows(target)
+            res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows)
             interval = res.interval
         return self._finish_adapt(res, interval)
 
     def _finish_adapt(self, res: Any, interval: Any) -> PriorShiftWrapper:
+        self.prior_estimate_ = res
         self.target_prior_ = res.prior
         self.target_prior_interval_ = interval
         self.shift_pvalue_ = res.shift_pvalue
         self.shift_statistic_ = res.shift_statistic
+        self.n_dropped_resamples_ = int(getattr(res, "n_dropped", 0))
+        k = self.classes_.shape[0]
+        stat = res.shift_statistic
+        threshold = float(self.min_evidence) * (k - 1)
+        if not getattr(res, "identified", True) or stat is None or not np.isfinite(stat):
+            weight = 0.0
+        elif threshold == 0:
+            weight = 1.0
+        else:
+            weight = max(0.0, 1.0 - threshold / stat) if stat > 0 else 0.0
+        self.adaptation_weight_ = float(weight)
+        self.shift_detected_ = bool(weight > 0)
+        src = self.source_prior_
+        if self.known_prior_ is not None:
+            self.applied_prior_ = self.known_prior_.copy()
+        elif weight > 0:
+            moved = src + weight * (np.asarray(res.prior, dtype=float) - src)
+            self.applied_prior_ = moved / moved.sum()
+        else:
+            self.applied_prior_ = src.copy()
         if self.known_prior_ is not None:
             warnings.warn(
                 "`target_prior` is set, so predict_proba keeps adjusting to it; the estimate "
@@ -399,25 +508,26 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         return table
 
     # -- prediction ------------------------------------------------------------------------------
-    def _prior_in_use(self) -> np.ndarray | None:
+    def _prior_in_use(self) -> np.ndarray:
         if self.known_prior_ is not None:
             return self.known_prior_
-        return getattr(self, "target_prior_", None)
+        return getattr(self, "applied_prior_", self.source_prior_)
 
     def predict_proba(self, X: Any) -> np.ndarray:
-        """Class probabilities adjusted to the target priors, shape (n, n_classes).
+        """Calibrated class probabilities re-weighted to ``applied_prior_``, shape (n, n_classes).
 
-        Before ``adapt`` and without ``target_prior`` these are the estimator's own
-        probabilities, unchanged.
+        At the source prior (before ``adapt``, or when ``adapt`` found no evidence of a shift,
+        or with ``target_prior`` equal to ``source_prior_``) these are the calibrated
+        probabilities themselves, unchanged.
         """
         check_is_fitted(self, "prior_estimator_")
         if _is_dask(X):
             return self._dask_predict(self.predict_proba, X, self.classes_.shape[0])
         proba = self._inner_output(X, "predict_proba")
-        prior = self._prior_in_use()
-        if prior is None:
-            return proba
         calibrated = self.prior_estimator_.calibrate(proba)
+        prior = self._prior_in_use()
+        if np.allclose(prior, self.source_prior_, rtol=0.0, atol=1e-12):
+            return calibrated
         return adjust_to_prior(calibrated, self.source_prior_, prior)
 
     def predict(self, X: Any) -> np.ndarray:

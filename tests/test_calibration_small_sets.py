@@ -250,3 +250,52 @@ def test_weights_summing_to_one_do_not_collapse_the_count_based_maps(cls):
         normalised = cls().fit(s, y, sample_weight=np.full(len(y), 1 / len(y))).predict(s)
     np.testing.assert_allclose(normalised, plain, atol=1e-12)
     assert plain.max() - plain.min() > 0.5  # far from a collapse to one value
+
+
+# --------------------------------------------------------------------------- auto's budget
+def _logistic_rows(n, slope, seed=0):
+    rng = np.random.default_rng(seed)
+    s = rng.normal(scale=2.0, size=n)
+    y = (rng.random(n) < 1 / (1 + np.exp(-s))).astype(int)
+    proba = 1 / (1 + np.exp(-slope * s))
+    return np.column_stack([1 - proba, proba]), y
+
+
+class _Table(LogisticRegression):
+    """A frozen 'model' whose input is the row number and whose output a stored table."""
+
+    def __init__(self, table=None):
+        self.table = table
+
+    def fit(self, X, y):
+        self.classes_ = np.unique(y)
+        self.n_features_in_ = 1
+        return self
+
+    def predict_proba(self, X):
+        return self.table[np.asarray(X, dtype=np.intp).ravel()]
+
+
+def test_auto_stops_scoring_a_hopeless_candidate_after_the_first_fold():
+    # scores that run against the labels: temperature scaling cannot turn the order round
+    # (its best is a flat 0.5), Platt scaling can; after the first fold temperature is dropped
+    table, y = _logistic_rows(3000, slope=-1.0)
+    X = np.arange(len(y)).reshape(-1, 1)
+    model = CalibrationWrapper(FrozenEstimator(_Table(table).fit(X, y)), random_state=0).fit(X, y)
+    assert "left out after fold" in model.method_notes_["temperature"]
+    assert "temperature" not in model.method_scores_
+    assert model.method_ != "temperature"
+    # the held-out log loss is that of a good map, far below the flat 0.5's ln 2
+    assert model.method_scores_[model.method_][0] < 0.6
+
+
+def test_auto_scores_a_sample_of_many_rows_and_fits_the_choice_on_all(monkeypatch):
+    import probwrap._calibration_wrapper as cw
+
+    monkeypatch.setattr(cw, "_SELECTION_MAX_ROWS", 500)
+    table, y = _logistic_rows(2000, slope=2.0)
+    X = np.arange(len(y)).reshape(-1, 1)
+    model = CalibrationWrapper(FrozenEstimator(_Table(table).fit(X, y)), random_state=0).fit(X, y)
+    assert "sample of 500 of 2000 rows" in model.method_notes_["auto"]
+    # the chosen map was fitted on all 2000 rows: its floor is 1 / (2000 + 2)
+    assert model.calibrator_.floor_ == pytest.approx(1 / 2002)

@@ -136,7 +136,12 @@ def test_predict_is_argmax_and_classes_keep_labels():
 def test_auto_records_scores_and_prefers_simple_maps_on_small_data(frozen_cancer):
     base, X, y = frozen_cancer
     model = CalibrationWrapper(FrozenEstimator(base), method="auto", random_state=0).fit(X, y)
-    assert set(model.method_scores_) == {"temperature", "platt", "beta", "binning", "isotonic", "venn_abers"}
+    six = {"temperature", "platt", "beta", "binning", "isotonic", "venn_abers"}
+    # every candidate is scored, or its note says why not (e.g. left out after the first fold)
+    assert set(model.method_scores_) | set(model.method_notes_) == six
+    assert all(
+        "left out after fold" in model.method_notes_[nm] for nm in six - set(model.method_scores_)
+    )
     best = min(v[0] for v in model.method_scores_.values())
     chosen_loss, _ = model.method_scores_[model.method_]
     # one-standard-error rule (Breiman et al. 1984, common practice): within one SE of the best
@@ -265,10 +270,18 @@ def test_auto_leaves_venn_abers_out_on_large_heldout_sets():
     base = LogisticRegression().fit(X[:2000], y[:2000])
     model = CalibrationWrapper(FrozenEstimator(base), method="auto", random_state=0).fit(X, y)
     assert "venn_abers" not in model.method_scores_
-    assert {"platt", "isotonic"} <= set(model.method_scores_)
+    assert {"platt", "isotonic"} <= set(model.method_scores_) | set(model.method_notes_)
     small = CalibrationWrapper(FrozenEstimator(base), method="auto", random_state=0)
-    assert "venn_abers" in small.fit(X[:3000], y[:3000]).method_scores_
+    small.fit(X[:600], y[:600])
+    assert "venn_abers" in set(small.method_scores_) | set(small.method_notes_)
+    mid = CalibrationWrapper(FrozenEstimator(base), method="auto", random_state=0)
+    assert "venn_abers" not in mid.fit(X[:3000], y[:3000]).method_scores_
     chosen = CalibrationWrapper(
         FrozenEstimator(base), method="auto", candidates=["platt", "venn_abers"], random_state=0
     ).fit(X, y)
-    assert set(chosen.method_scores_) == {"platt", "venn_abers"}
+    # 22,000 rows: scored on a sample of 20,000 (method_notes_["auto"] says so)
+    assert "sample of 20000 of 22000 rows" in chosen.method_notes_["auto"]
+    assert (set(chosen.method_scores_) | set(chosen.method_notes_)) - {"auto"} == {
+        "platt",
+        "venn_abers",
+    }

@@ -12,6 +12,15 @@ from probwrap.datasets import make_parcels
 from probwrap.decision import search_cutoff
 
 
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
+    import probwrap.cli._common as common
+
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+
+
+
 class _Figures(html.parser.HTMLParser):
     def __init__(self):
         super().__init__()

@@ -18,6 +18,15 @@ from probwrap.cli import main
 from probwrap.decision import search_cutoff
 
 
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
+    import probwrap.cli._common as common
+
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+
+
+
 @pytest.fixture(scope="module")
 def text_files(tmp_path_factory):
     root = tmp_path_factory.mktemp("labels")
@@ -110,6 +119,7 @@ def test_report_accepts_text_labels_and_matches_coded_labels(text_files, tmp_pat
     coded = json.loads(out)
     assert text["cutoff"] == coded["cutoff"]
     assert text["labels"] == {"negative": "no", "positive": "yes"}
+    assert "(positive class: yes)" in (tmp_path / "text.html").read_text(encoding="utf-8")
     assert coded["labels"] == {"negative": 0, "positive": 1}
 
 
@@ -150,3 +160,18 @@ def test_read_labels_needs_the_option_for_labels_other_than_0_1(labels):
 
     with pytest.raises(DataError, match="--positive-label"):
         read_labels(pd.DataFrame({"y": labels}), "y", "f.csv")
+
+
+def test_report_on_log_odds_matches_the_report_on_probabilities(text_files, tmp_path, capsys):
+    root, p, y = text_files
+    pd.DataFrame({"score": np.log(p / (1 - p)), "y": y}).to_csv(tmp_path / "lo.csv", index=False)
+    pd.DataFrame({"score": p, "y": y}).to_csv(tmp_path / "pr.csv", index=False)
+    got = {}
+    for name, scale in (("lo", "log-odds"), ("pr", "proba")):
+        code, out, err = run(capsys, "report", "--scores", tmp_path / f"{name}.csv",
+                             "--score-column", "score", "--label-column", "y", "--scale", scale,
+                             "--cost-fp", "3", "--cost-fn", "40", "--resamples", "10",
+                             "--out", tmp_path / f"{name}.html", "--format", "json")
+        assert code == 0, err
+        got[name] = json.loads(out)
+    assert got["lo"]["cutoff"] == pytest.approx(got["pr"]["cutoff"], rel=1e-9)

@@ -18,6 +18,15 @@ from probwrap.cli import build_parser, main
 from probwrap.cli._common import MIN_RESAMPLES, numeric_column, read_table
 
 
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
+    import probwrap.cli._common as common
+
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+
+
+
 def run(capsys, *argv):
     code = main([str(a) for a in argv])
     out, err = capsys.readouterr()
@@ -252,9 +261,13 @@ def test_csv_numbers_read_back_exactly_without_deprecated_options(tmp_path, recw
 
 # -- missing optional packages -------------------------------------------------------------------
 _BLOCKED = textwrap.dedent("""
-    import sys
-    for name in ("pandas", "pyarrow", "tqdm"):
-        sys.modules[name] = None  # as if not installed
+    import importlib.abc, sys
+    class Block(importlib.abc.MetaPathFinder):  # as if the cli extra were not installed
+        def find_spec(self, name, path=None, target=None):
+            if name.split(".")[0] in ("pandas", "pyarrow", "tqdm"):
+                raise ModuleNotFoundError(f"No module named {name!r}", name=name)
+            return None
+    sys.meta_path.insert(0, Block())
     from probwrap.cli import main
     sys.exit(main(sys.argv[1:]))
 """)

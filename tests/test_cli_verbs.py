@@ -23,6 +23,15 @@ from probwrap.datasets import make_parcels
 from probwrap.decision import cutoff_interval, search_cutoff
 from probwrap.shift import PriorEstimator, em_prior, shift_test
 
+
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
+    import probwrap.cli._common as common
+
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+
+
 COSTS = {"fp": 3.0, "fn": 40.0}
 
 
@@ -86,13 +95,15 @@ def test_calibrate_apply_writes_what_the_fitted_map_predicts(files, capsys, out_
                          "--scores", root / "winter.csv", "--score-column", "risk",
                          "--out", root / out_name)
     assert code == 0, err
-    written = (
-        pd.read_csv(root / out_name, float_precision="round_trip")
-        if out_name.endswith("csv") else pd.read_parquet(root / out_name)
-    )
+    if out_name.endswith("csv"):  # text read back with Python's correctly rounded float()
+        written = pd.read_csv(root / out_name, dtype=str)
+        got = np.array([float(v) for v in written["calibrated_probability"]])
+    else:
+        written = pd.read_parquet(root / out_name)
+        got = written["calibrated_probability"].to_numpy()
     assert list(written.columns) == ["risk", "calibrated_probability"]
     expected = fitted.predict(proba_to_log_odds(files["p_winter"]))
-    np.testing.assert_array_equal(written["calibrated_probability"].to_numpy(), expected)
+    np.testing.assert_array_equal(got, expected)
     assert "wrote 800 rows" in out
 
 
@@ -296,7 +307,8 @@ def test_module_entry_point_in_a_subprocess(files):
     got = json.loads(proc.stdout)
     res = search_cutoff(files["p_held"], files["held"].target, COSTS, score_bounds=(0, 1))
     assert got["cutoff"] == res.cutoff
-    assert proc.stderr == ""  # quiet off a terminal: no progress bar
+    # off a terminal: no bar; at most plain step lines when the machine is slow
+    assert all(line.startswith("probwrap cutoff: step ") for line in proc.stderr.splitlines())
     bad = subprocess.run(
         [sys.executable, "-m", "probwrap.cli", "cutoff", "--scores", str(root / "nope.csv"),
          "--score-column", "risk", "--label-column", "damaged", "--cost-fp", "3",

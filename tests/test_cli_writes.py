@@ -23,6 +23,15 @@ import pytest
 from probwrap.cli import main
 from probwrap.cli._common import DataError, write_atomic, write_text
 
+
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
+    import probwrap.cli._common as common
+
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+
+
 posix_only = pytest.mark.skipif(os.name != "posix", reason="POSIX signals and resource limits")
 
 
@@ -176,8 +185,9 @@ def test_full_disk_leaves_the_previous_output_intact(scores, capsys, kind):
     proc = _run_limited(2048, argv)  # far less than any of these files
     assert proc.returncode == 1, proc.stderr
     assert "cannot be written" in proc.stderr and "File too large" in proc.stderr
-    assert proc.stderr.count("\n") == proc.stderr.count("warning:") + 1
-    assert "Traceback" not in proc.stderr
+    lines = [line for line in proc.stderr.splitlines()
+             if ": warning: " not in line and ": step " not in line]  # progress on a slow day
+    assert len(lines) == 1 and "Traceback" not in proc.stderr
     assert out.read_bytes() == previous
     assert _leftovers(scores) == []
     if kind == "map":  # the kept map still works
@@ -271,3 +281,17 @@ def test_permission_denied_is_a_one_line_error(scores, capsys, monkeypatch, verb
     assert code == 1
     assert err[-1].startswith(f"probwrap {verb}: error: ") and "Permission denied" in err[-1]
     assert all("warning" in line or "step" in line for line in err[:-1])
+
+
+def test_apply_csv_to_parquet_keeps_numbers_as_numbers(scores, capsys):
+    assert _fit(scores) == 0
+    out = scores / "today.parquet"
+    assert main(["calibrate", "apply", "--map", str(scores / "map.json"), "--scores",
+                 str(scores / "held.csv"), "--score-column", "risk", "--out", str(out)]) == 0
+    frame = pd.read_parquet(out)
+    assert frame["risk"].dtype == np.float64
+    # the exact numbers of the CSV text (Python's float() rounds correctly; pandas' own
+    # CSV parser is off by one unit in the last place for about a third of these in 2.1)
+    text = (scores / "held.csv").read_text().splitlines()[1:]
+    exact = np.array([float(line.split(",")[0]) for line in text])
+    np.testing.assert_array_equal(frame["risk"].to_numpy(), exact)

@@ -127,19 +127,30 @@ def test_calibration_numbers_match_library(scenario, report):
     content, page, _, _ = report
     assert np.isclose(_val(page.rows["brier"][0]), brier_score(y, p), rtol=1e-12)
     assert np.isclose(_val(page.rows["log_loss"][0]), log_loss(y, p), rtol=1e-12)
-    assert np.isclose(_val(page.rows["ece"][0]), expected_calibration_error(y, p, n_bins=10))
-    # bootstrap interval: the report draws its own seed, so compare with the library's bootstrap
-    # of 2000 resamples (close to the exact percentiles). An endpoint of a 2.5 % / 97.5 %
-    # quantile from B draws has a Monte-Carlo sd of about sqrt(.025 * .975 / B) / phi(1.96)
-    # = 0.42 standard errors for B = 40; we allow 5 sd = 2.1 standard errors.
-    res = bootstrap_interval(brier_score, y, p, n_resamples=2000, random_state=0)
-    low, high = _val(page.rows["brier"][1]), _val(page.rows["brier"][2])
-    assert abs(low - res.confidence_interval.low) < 2.1 * res.standard_error
-    assert abs(high - res.confidence_interval.high) < 2.1 * res.standard_error
-    # and not degenerate: the width (about 3.9 se) has a Monte-Carlo sd of about 0.6 se
-    assert high - low > 0.25 * (res.confidence_interval.high - res.confidence_interval.low)
     m = {row.key: row for row in content.metrics}
+    plain = expected_calibration_error(y, p, n_bins=10)
+    assert m["ece"].plain_value == plain
+    assert f"{plain:.4f}" in page.text  # the plain binned value is printed in the note
+    # bootstrap intervals (consistency with the library): the report draws its bootstrap seed
+    # as the first randint(2**31 - 1) of RandomState(random_state), so bootstrap_interval with
+    # that seed gives the very same intervals
+    seed = np.random.RandomState(0).randint(2**31 - 1)
+    res = bootstrap_interval(brier_score, y, p, n_resamples=N_RES, random_state=seed)
+    assert _val(page.rows["brier"][1]) == res.confidence_interval.low
+    assert _val(page.rows["brier"][2]) == res.confidence_interval.high
     assert _val(page.rows["slope"][1]) == m["slope"].low
+    # the binned error: bias-corrected 2 s - median(s*), with the basic bootstrap interval
+    # (2 s - q_high, 2 s - q_low) (Davison & Hinkley 1997, eq. 5.6), floored at 0 -- computed
+    # here from the resampled values by hand
+    res = bootstrap_interval(expected_calibration_error, y, p, n_resamples=N_RES,
+                             random_state=seed, method="basic", n_bins=10)
+    dist = res.bootstrap_distribution
+    q_lo, q_hi = np.quantile(dist, [0.025, 0.975])
+    value, low, high = (_val(page.rows["ece"][i]) for i in range(3))
+    assert np.isclose(value, max(2 * plain - np.median(dist), 0.0), rtol=1e-12)
+    assert np.isclose(low, max(2 * plain - q_hi, 0.0), rtol=1e-12, atol=1e-15)
+    assert np.isclose(high, max(2 * plain - q_lo, 0.0), rtol=1e-12)
+    assert low <= value <= high
 
 
 def test_decision_numbers_match_library(scenario, report):

@@ -144,11 +144,14 @@ def test_dask_cutoff_interval_agrees_with_in_memory(client, model):
     np.testing.assert_array_equal(again.cutoff_interval_.bootstrap_cutoffs, a.bootstrap_cutoffs)
 
 
-def test_dask_prior_interval_agrees_with_in_memory(client, model):
+@pytest.mark.parametrize("interval", ["score", "bca"])
+def test_dask_prior_interval_agrees_with_in_memory(client, model, interval):
+    # "score": computed from the tallies (no replicates); "bca": Poisson replicates tallied on
+    # the workers (bias-corrected percentile) against the in-memory BCa bootstrap
     da = pytest.importorskip("dask.array")
     X, y = _data(20_000, seed=7)
     X_new, _ = _data(10_000, seed=8, shift=0.6)
-    kw = dict(n_resamples=100, random_state=0)
+    kw = dict(n_resamples=100, random_state=0, interval=interval)
     remote = PriorShiftWrapper(model, **kw).fit(
         da.from_array(X, chunks=(5000, 3)), da.from_array(y, chunks=5000)
     ).adapt(da.from_array(X_new, chunks=(5000, 3)))

@@ -93,7 +93,7 @@ def test_em_bootstrap_interval_matches_observed_fisher_information():
     p_src, y_src = binary_gaussian(2000, 0.5, rng)
     p_new, _ = binary_gaussian(2000, 0.25, rng)
     est = PriorEstimator(calibration=None, n_resamples=400, resample_source=False,
-                         random_state=1).fit(p_src, y_src)
+                         random_state=1, interval="percentile").fit(p_src, y_src)
     res = est.estimate(p_new)
     src = est.source_prior_
     a, b = p_new[:, 1] / src[1], p_new[:, 0] / src[0]
@@ -110,7 +110,7 @@ def test_resampling_the_source_widens_the_interval():
     widths = []
     for resample in (False, True):
         est = PriorEstimator("bbse", n_resamples=200, resample_source=resample,
-                             random_state=2).fit(p_src, y_src)
+                             random_state=2, interval="percentile").fit(p_src, y_src)
         iv = est.estimate(p_new).interval[1]
         widths.append(iv[1] - iv[0])
     assert widths[1] > 1.3 * widths[0]
@@ -166,7 +166,9 @@ def test_breast_cancer_resampled_to_known_prevalence(target):
         assert res.prior[1] == pytest.approx(truth[1], abs=0.06), method
         if method == "em":
             assert res.interval[1, 0] <= truth[1] <= res.interval[1, 1]
-            assert res.shift_pvalue < 1e-3
+            # the shift test also carries the error of the ~170 labelled rows, so a move from
+            # 63 % to 75 % is detected at 1 %, not at 0.1 %
+            assert res.shift_pvalue < 1e-2
 
 
 def test_digits_ten_classes_resampled_to_known_priors():

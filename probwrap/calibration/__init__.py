@@ -8,6 +8,7 @@ from ._logodds import DEFAULT_CLIP, log_odds_to_proba, proba_to_log_odds, proba_
 from ._platt import PlattMap
 from ._serialize import MAP_SCORE_SCALES, map_from_dict, map_score_scale, map_to_dict
 from ._temperature import TemperatureMap
+from ._vector_scaling import MatrixScalingMap, VectorScalingMap
 from ._venn_abers import VennAbersMap
 
 __all__ = [
@@ -17,9 +18,11 @@ __all__ = [
     "DEFAULT_CLIP",
     "IsotonicMap",
     "MAP_SCORE_SCALES",
+    "MatrixScalingMap",
     "NONPARAMETRIC",
     "PlattMap",
     "TemperatureMap",
+    "VectorScalingMap",
     "VennAbersMap",
     "WeightScaleWarning",
     "log_odds_to_proba",

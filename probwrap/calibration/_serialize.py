@@ -48,6 +48,8 @@ from ._binning import BinningMap
 from ._isotonic import IsotonicMap
 from ._platt import PlattMap
 from ._temperature import TemperatureMap
+from ._vector_scaling import MatrixScalingMap, VectorScalingMap
+from ._vector_scaling import _check_settings as _check_scaling_settings
 from ._venn_abers import VennAbersMap
 
 __all__ = [
@@ -75,9 +77,9 @@ _MAX_NODES = 1_000_000
 _ORDER_TOL = 1e-12
 
 #: method name -> (map class, constructor settings, fitted attributes with their kind).
-#: Kinds: "float" (a finite number), "int", "array" (a 1-d list of finite numbers), "floor" (the
-#: output floor of a regularised map: a number in [0, 0.5); 0 when absent, as written before
-#: maps had floors).
+#: Kinds: "float" (a finite number), "int", "array" (a 1-d list of finite numbers), "matrix"
+#: (a 2-d list of lists of finite numbers), "floor" (the output floor of a regularised map: a
+#: number in [0, 0.5); 0 when absent, as written before maps had floors).
 _SPECS: dict[str, tuple[type[CalibrationMap], tuple[str, ...], dict[str, str]]] = {
     "temperature": (
         TemperatureMap, ("smooth_targets",), {"temperature_": "float", "floor_": "floor"}
@@ -118,6 +120,16 @@ _SPECS: dict[str, tuple[type[CalibrationMap], tuple[str, ...], dict[str, str]]] 
             "p0_between_": "array",
             "p1_between_": "array",
         },
+    ),
+    "vector_scaling": (
+        VectorScalingMap,
+        ("shrinkage", "smooth_targets"),
+        {"scales_": "array", "intercepts_": "array"},
+    ),
+    "matrix_scaling": (
+        MatrixScalingMap,
+        ("shrinkage", "smooth_targets"),
+        {"coef_": "matrix", "intercepts_": "array"},
     ),
 }
 
@@ -216,7 +228,8 @@ def map_to_dict(
     ----------
     cal_map : CalibrationMap
         A fitted :class:`PlattMap`, :class:`IsotonicMap`, :class:`BetaMap`,
-        :class:`TemperatureMap`, :class:`BinningMap` or :class:`VennAbersMap`.
+        :class:`TemperatureMap`, :class:`BinningMap`, :class:`VennAbersMap`,
+        :class:`VectorScalingMap` or :class:`MatrixScalingMap`.
     score_scale : {"proba", "log-odds"}
         Required. What the scores that the saved map will be applied to are: ``"proba"`` for
         positive-class probabilities (turned into log-odds with
@@ -264,6 +277,11 @@ def map_to_dict(
             arr = np.asarray(value, dtype=float)
             if arr.ndim != 1 or not np.all(np.isfinite(arr)):
                 raise ValueError(f"`{attr}` of the map must be a 1-d array of finite numbers.")
+            fitted[attr] = arr.tolist()
+        elif kind == "matrix":
+            arr = np.asarray(value, dtype=float)
+            if arr.ndim != 2 or not np.all(np.isfinite(arr)):
+                raise ValueError(f"`{attr}` of the map must be a 2-d array of finite numbers.")
             fitted[attr] = arr.tolist()
         elif kind == "int":
             fitted[attr] = int(value)
@@ -364,6 +382,16 @@ def _numbers(value: Any, where: str) -> np.ndarray:
     return arr
 
 
+def _matrix(value: Any, where: str) -> np.ndarray:
+    """A non-empty list of equally long lists of finite numbers as a 2-d float array."""
+    if not isinstance(value, (list, tuple)) or not value:
+        raise ValueError(f"field '{where}' must be a list of lists of numbers; got {_short(value)}.")
+    rows = [_numbers(row, f"{where}[{i}]") for i, row in enumerate(value)]
+    if len({row.shape[0] for row in rows}) != 1:
+        raise ValueError(f"field '{where}' must hold rows of equal length.")
+    return np.vstack(rows)
+
+
 def _short(value: Any) -> str:
     text = repr(value)
     return text if len(text) <= 60 else text[:57] + "..."
@@ -454,6 +482,9 @@ def map_from_dict(
         if kind == "array":
             setattr(cal_map, attr, _numbers(value, f"fitted.{attr}"))
             continue
+        if kind == "matrix":
+            setattr(cal_map, attr, _matrix(value, f"fitted.{attr}"))
+            continue
         if kind == "int":
             if isinstance(value, bool) or not isinstance(value, numbers.Integral):
                 raise ValueError(f"field 'fitted.{attr}' must be a whole number; got {_short(value)}.")
@@ -515,6 +546,11 @@ def _check_settings(method: str, m: Any) -> None:
         raise ValueError(
             f"field 'settings.smooth_targets' must be true or false; got {m.smooth_targets!r}."
         )
+    if method in ("vector_scaling", "matrix_scaling"):
+        try:
+            _check_scaling_settings(m)
+        except ValueError as exc:
+            raise ValueError(f"field 'settings': {exc}") from None
     if method == "binning":
         try:
             m._check_params()
@@ -610,5 +646,14 @@ def _check_shapes(method: str, m: Any) -> None:
             raise ValueError(
                 "field 'fitted.edges_' must hold one increasing edge fewer than there are bins."
             )
+    elif method in ("vector_scaling", "matrix_scaling"):
+        k = max(m.n_score_columns_, 2)  # binary log-odds are read as two logit columns
+        shapes = {"intercepts_": (k,)}
+        shapes["scales_" if method == "vector_scaling" else "coef_"] = (
+            (k,) if method == "vector_scaling" else (k, k)
+        )
+        for attr, shape in shapes.items():
+            if getattr(m, attr).shape != shape:
+                raise ValueError(f"field 'fitted.{attr}' must have shape {shape}.")
     elif method == "temperature" and not m.temperature_ > 0:
         raise ValueError("field 'fitted.temperature_' must be positive.")

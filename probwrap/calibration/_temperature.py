@@ -5,7 +5,6 @@ from __future__ import annotations
 import warnings
 
 import numpy as np
-from scipy.optimize import brentq
 from scipy.special import expit, softmax
 
 from .._validation import plain, power_of_two_unit
@@ -65,6 +64,82 @@ def _loss_slope(
     return float(wn @ (expected - target))
 
 
+def _slope_and_curvature(
+    log_beta: float, scores: np.ndarray, target: np.ndarray, wn: np.ndarray
+) -> tuple[float, float]:
+    """The loss slope of :func:`_loss_slope` and its derivative with respect to ``log(beta)``.
+
+    ``target`` is :func:`_target_scores` (it does not depend on ``beta``). The derivative is
+    ``beta * sum wn * Var_q(z)``: the variance of the scores under the model's probabilities.
+    """
+    beta = np.exp(log_beta)
+    if scores.ndim == 1:
+        q = expit(beta * scores)
+        sq = scores * q
+        return float(wn @ (sq - target)), float(beta * (wn @ (sq * scores * (1.0 - q))))
+    q = softmax(beta * scores, axis=1)
+    qz = q * scores
+    mean = qz.sum(axis=1)
+    var = np.maximum(np.einsum("ij,ij->i", qz, scores) - mean**2, 0.0)
+    return float(wn @ (mean - target)), float(beta * (wn @ var))
+
+
+def _root_log_beta(
+    scores: np.ndarray, target: np.ndarray, wn: np.ndarray, lo: float, hi: float, start: float
+) -> tuple[float, str | None]:
+    """Root of the loss slope in ``log(beta)`` within ``[lo, hi]``.
+
+    The slope is non-decreasing in ``beta`` (convex loss), so Newton steps on ``log(beta)``,
+    safeguarded by bisection whenever a step would leave the current bracket, converge
+    quadratically; they stop when a step is below 1e-14 (relative) or the slope is exactly 0.
+    Bisection also takes over when a Newton step is not at most half the previous step. The ends of the range
+    are evaluated only when bisection needs them; when the slope has the same sign at an end,
+    the root lies beyond the range and that end is returned with ``"lo"`` or ``"hi"``.
+    """
+    a, b = lo, hi
+    a_checked = b_checked = False
+    previous = 2.0 * (hi - lo)
+    u = min(max(start, lo), hi)
+    for _ in range(300):
+        g, d = _slope_and_curvature(u, scores, target, wn)
+        if g == 0.0:
+            if d == 0.0:
+                # a plateau (saturated probabilities): the loss is flat up to an end of the range
+                if _slope_and_curvature(hi, scores, target, wn)[0] <= 0.0:
+                    return hi, "hi"
+                if _slope_and_curvature(lo, scores, target, wn)[0] >= 0.0:
+                    return lo, "lo"
+            return u, None
+        if g < 0.0:
+            a, a_checked = u, True
+        else:
+            b, b_checked = u, True
+        tol = 1e-14 * max(1.0, abs(u))
+        step = g / d if d > 0.0 else (np.inf if g > 0 else -np.inf)
+        if abs(step) <= tol:
+            return min(max(u - step, a), b), None
+        new = u - step
+        # Newton steps must at least halve (as in Press et al.'s safeguarded "rtsafe")
+        slow = abs(step) > 0.5 * previous
+        previous = abs(step)
+        if slow or not a < new < b:
+            # bisect, on a verified bracket: an end of the range is evaluated only now, and
+            # when the slope has the same sign there the root lies beyond the range
+            if not b_checked:
+                if _slope_and_curvature(hi, scores, target, wn)[0] <= 0.0:
+                    return hi, "hi"
+                b_checked = True
+            if not a_checked:
+                if _slope_and_curvature(lo, scores, target, wn)[0] >= 0.0:
+                    return lo, "lo"
+                a_checked = True
+            new = 0.5 * (a + b)
+        if b - a <= tol:
+            return new, None
+        u = new
+    return u, None  # pragma: no cover - the bracket halves at least every other step
+
+
 class TemperatureMap(CalibrationMap):
     """Temperature scaling: divide the log-odds (or logits) by one fitted temperature ``T > 0``.
 
@@ -80,8 +155,8 @@ class TemperatureMap(CalibrationMap):
     finite when the scores separate the classes, and outputs are kept at least
     ``floor_ = 1 / (N + k)`` (``N`` the total weight). The loss is convex in ``1 / T``, so the minimum is
     unique and is the root of the loss's derivative with respect to ``1 / T``; the root is found
-    on ``log T`` by Brent's method (SciPy ``brentq``, tolerance 1e-14), which stays precise
-    even where the loss itself is flat. The search covers ``exp(+-16)`` times the
+    on ``log T`` by Newton's method safeguarded by bisection (tolerance 1e-14), which stays
+    precise even where the loss itself is flat. The search covers ``exp(+-16)`` times the
     root-mean-square score; when the best ``T`` lies beyond an end (scores unrelated to or
     against the labels, or raw labels separated perfectly) the map warns, uses that end and
     records ``boundary_``.
@@ -168,16 +243,13 @@ class TemperatureMap(CalibrationMap):
             return
         # search log(beta) = -log(T) within exp(+-_LOG_SPAN) of 1 / scale
         lo, hi = -np.log(scale) - _LOG_SPAN, -np.log(scale) + _LOG_SPAN
-        args = (scores, y, wn, counts)
-        at_end = False
-        if _loss_slope(lo, *args) >= 0:
-            log_beta, at_end = lo, True  # scores unrelated to (or against) the labels
+        target = _target_scores(scores, y, counts)
+        log_beta, end = _root_log_beta(scores, target, wn, lo, hi, -np.log(scale))
+        at_end = end is not None
+        if end == "lo":  # scores unrelated to (or against) the labels
             self.boundary_ = "temperature at the high end of its search range (flat output)"
-        elif _loss_slope(hi, *args) <= 0:
-            log_beta, at_end = hi, True  # classes separated perfectly
+        elif end == "hi":  # classes separated perfectly
             self.boundary_ = "temperature at the low end of its search range (sharpest output)"
-        else:
-            log_beta = brentq(_loss_slope, lo, hi, args=args, xtol=1e-14, rtol=1e-15)
         log_t = -float(log_beta)
         with np.errstate(over="ignore"):
             temperature = np.exp(log_t) * unit

@@ -248,6 +248,7 @@ def _apply(args: argparse.Namespace) -> int:
         if not np.all(np.isfinite(out)):
             raise DataError(f"{args.map}: the map gives probabilities that are not finite")
         frame = frame.copy()
+        frame[args.score_column] = scores  # numbers (a CSV column was read as text, exactly)
         frame[args.output_column] = out
         stages.start("writing")
         write_table(frame, args.out)

@@ -136,7 +136,7 @@ def prevalence_from_reference(
     >>> out["prevalence"] > out["source_prevalence"], out["shift_pvalue"] < 1e-6
     (True, True)
     """
-    from probwrap.shift import PriorEstimator, shift_test
+    from probwrap.shift import PriorEstimator, ShiftTestResult
 
     est = PriorEstimator(
         method,
@@ -146,7 +146,8 @@ def prevalence_from_reference(
         random_state=seed,
     ).fit(_two_columns(ref_proba), ref_y)
     res = est.estimate(_two_columns(proba))
-    test = shift_test(est.calibrate(_two_columns(proba)), est.source_prior_)
+    # the estimator's two-sample score test (it carries the reference rows' error too)
+    test = ShiftTestResult(res.shift_statistic, res.shift_pvalue, 1)
     out = _result(
         res.prior[1], res.converged, method, proba.shape[0], float(est.source_prior_[1]), test
     )

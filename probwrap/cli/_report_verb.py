@@ -333,6 +333,8 @@ def _handler(args: argparse.Namespace) -> int:
 
             p = log_odds_to_proba(p)
             q = None if q is None else log_odds_to_proba(q)
+        if [str(v) for v in labels] != ["0", "1"]:  # say on the page which class is positive
+            args.title = f"{args.title} (positive class: {labels[1]})"
         content = _build_and_write(
             args, stages, y_true=y, y_prob=p, costs=costs, capacity=args.capacity,
             unlabelled_prob=q, batch_size=args.batch_size,

@@ -22,9 +22,17 @@ __all__ = ["CostCurveDisplay", "cutoff_cost"]
 def cutoff_cost(
     y01: np.ndarray, p: np.ndarray, matrix: np.ndarray, cutoff: float, sample_weight: Any = None
 ) -> float:
-    """Mean cost per row of "act when ``p > cutoff``" (via :func:`realised_cost`)."""
-    return realised_cost(
-        y01, (p > cutoff).astype(np.intp), costs=matrix, classes=[0, 1], actions=[0, 1],
+    """Mean cost per row of "act when ``p > cutoff``" (via :func:`realised_cost`).
+
+    The costs are divided by a power of two near their largest magnitude first and the mean
+    multiplied back (exact in floating point), so that huge finite costs do not overflow the
+    sum over rows.
+    """
+    m = np.asarray(matrix, dtype=float)
+    top = float(np.max(np.abs(m)))
+    scale = 2.0 ** np.floor(np.log2(top)) if top > 0 and np.isfinite(top) else 1.0
+    return scale * realised_cost(
+        y01, (p > cutoff).astype(np.intp), costs=m / scale, classes=[0, 1], actions=[0, 1],
         sample_weight=sample_weight,
     )
 
@@ -245,7 +253,7 @@ class CostCurveDisplay:
         if self.plugin_cutoff is not None:
             self.plugin_line_ = ax.axvline(
                 self.plugin_cutoff, color=PALETTE["plugin"], linestyle=(0, (5, 2)),
-                linewidth=1.2, label=f"Bayes plug-in cutoff {self.plugin_cutoff:.3f}",
+                linewidth=1.2, label=f"Bayes cutoff {self.plugin_cutoff:.3f}",
             )
         self.half_line_ = ax.axvline(0.5, color=PALETTE["half"], linestyle=":", linewidth=1.0,
                                      label="0.5 cutoff")

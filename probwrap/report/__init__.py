@@ -11,6 +11,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
+from ._common import Recommendation, ReportNote
 from ._content import MetricRow, ReportContent, RuleRow, collect_content
 from ._general import ActionRuleRow, MulticlassReportContent
 from ._html import CAUTIONS, figure_to_svg, make_figures, render_html
@@ -20,7 +21,9 @@ __all__ = [
     "ActionRuleRow",
     "MetricRow",
     "MulticlassReportContent",
+    "Recommendation",
     "ReportContent",
+    "ReportNote",
     "RuleRow",
     "build_report",
     "figure_to_svg",
@@ -60,11 +63,18 @@ def write_report(
     title: str = "probwrap report",
     row_costs: Any = None,
     class_names: Any = None,
+    progress: Any = None,
 ) -> ReportContent | MulticlassReportContent:
     """Write a self-contained HTML report and return the numbers it shows.
 
-    Sections: calibration (Brier score, log loss, expected calibration error, calibration slope
-    and intercept, each with a bootstrap interval; reliability diagram), decisions (cost matrix,
+    A "recommendation" box at the top names the rule to use now, why, and its cost and share
+    acted on, within the capacity at the estimated prevalence (see ``Recommendation``); warnings
+    met while computing a number are shown in a "notes" box beside it (``content.notes``) and
+    warned once more with the number named.
+
+    Sections: calibration (Brier score, log loss, expected calibration error (bias-corrected,
+    basic bootstrap interval), calibration slope and intercept, each with a bootstrap interval;
+    reliability diagram), decisions (cost matrix,
     chosen cutoff with its interval, Bayes plug-in cutoff, mean cost of the chosen rule beside
     the plug-in rule, the 0.5 cutoff and acting on none or all rows, capacity; cost and decision
     curves), prevalence (source versus estimated target prevalence with interval and shift test,
@@ -130,6 +140,10 @@ def write_report(
         General form: display names of the classes, one per column of the probabilities
         (default: the class labels). With ``y_true``/``y_prob``, labels are column indices
         ``0..k-1`` or any labels whose sorted distinct values match the columns.
+    progress : callable, optional
+        ``progress(step, done, total)`` is called before each long step (``step`` names it:
+        "calibration metrics", "decision rules", "prevalence", "prevalence by batch") and once
+        more as ``("done", total, total)``; for a progress display.
 
     Returns
     -------
@@ -168,7 +182,7 @@ def write_report(
         unlabelled_prob=unlabelled_prob, X_unlabelled=X_unlabelled, prior_shift=prior_shift,
         batch_size=batch_size, n_bins=n_bins, n_resamples=n_resamples,
         confidence_level=confidence_level, random_state=random_state, title=title,
-        row_costs=row_costs, class_names=class_names,
+        row_costs=row_costs, class_names=class_names, progress=progress,
     )
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)

@@ -100,7 +100,8 @@ def reliability_svg(
 
 
 def cost_svg(result: Any, *, chosen_cutoff: float | None = None, interval: Any = None,
-             plugin: float | None = None, key: str = "cost") -> str:
+             plugin: float | None = None, key: str = "cost",
+             chosen_name: str = "chosen cutoff") -> str:
     """Mean cost per row against the cutoff, with the chosen, plug-in and 0.5 cutoffs, as SVG.
 
     ``result`` is a :class:`probwrap.decision.CutoffSearchResult`; decisions beyond a capacity
@@ -124,7 +125,7 @@ def cost_svg(result: Any, *, chosen_cutoff: float | None = None, interval: Any =
     chosen = float(result.cutoff if chosen_cutoff is None else chosen_cutoff)
     chart = Chart(key, title="Cost versus cutoff", width=560, height=380,
                   description="Mean cost per row of acting when the probability exceeds each "
-                  "cutoff, with the chosen cutoff, its interval, the Bayes plug-in cutoff and "
+                  "cutoff, with the chosen cutoff, its interval, the Bayes cutoff and "
                   "the 0.5 cutoff.")
     panel = chart.add_panel(xlim=(0.0, 1.0), ylim=(0.0, _upper(costs)),
                             xlabel="cutoff on the probability (act when p > cutoff)",
@@ -141,10 +142,10 @@ def cost_svg(result: Any, *, chosen_cutoff: float | None = None, interval: Any =
     panel.line(cutoffs, np.where(admissible, costs, np.nan), color=PALETTE["observed"],
                width=1.6, label="mean cost per row", name="curve")
     panel.vline(chosen, color=PALETTE["chosen"], width=1.4, name="chosen",
-                label=f"chosen cutoff {chosen:.3f}")
+                label=f"{chosen_name} {chosen:.3f}")
     if plugin is not None:
         panel.vline(float(plugin), color=PALETTE["plugin"], width=1.2, dash=(5, 2),
-                    name="plugin", label=f"Bayes plug-in cutoff {plugin:.3f}")
+                    name="plugin", label=f"Bayes cutoff {plugin:.3f}")
     panel.vline(0.5, color=PALETTE["half"], width=1.0, dash="dotted", name="half",
                 label="0.5 cutoff")
     panel.legend("upper right")
@@ -152,7 +153,8 @@ def cost_svg(result: Any, *, chosen_cutoff: float | None = None, interval: Any =
 
 
 def decision_curve_svg(y_true: Any, y_prob: Any, *, sample_weight: Any = None,
-                       marked_threshold: float | None = None, key: str = "dc") -> str:
+                       marked_threshold: float | None = None, key: str = "dc",
+                       marked_name: str = "cutoff in use") -> str:
     """Net benefit against threshold probability (Vickers & Elkin 2006), as SVG.
 
     Thresholds 0.01, 0.02, ..., 0.99; the model's net benefit
@@ -189,7 +191,7 @@ def decision_curve_svg(y_true: Any, y_prob: Any, *, sample_weight: Any = None,
     panel.line(t, nb, color=PALETTE["observed"], width=1.8, label="model", name="model")
     if marked_threshold is not None:
         panel.vline(float(marked_threshold), color=PALETTE["chosen"], width=1.1, name="marked",
-                    label=f"cutoff in use {marked_threshold:.3f}")
+                    label=f"{marked_name} {marked_threshold:.3f}")
     panel.legend("upper right")
     return chart.to_svg()
 
@@ -286,10 +288,11 @@ def builtin_figures(content: Any) -> dict[str, str]:
     )}
     if c.cost_matrix is not None:
         figs["cost"] = cost_svg(c.cost_curve, chosen_cutoff=c.chosen_cutoff,
-                                interval=c.cost_interval, plugin=c.plugin, key="cost")
+                                interval=c.cost_interval, plugin=c.plugin, key="cost",
+                                chosen_name=c.chosen_name)
     figs["decision_curve"] = decision_curve_svg(
         c.y_true, c.y_prob, sample_weight=c.sample_weight, marked_threshold=c.chosen_cutoff,
-        key="dc",
+        key="dc", marked_name=c.chosen_name,
     )
     if c.batch_table is not None:
         figs["prevalence"] = prevalence_svg(c.batch_table, source_prevalence=c.source_prevalence,

@@ -7,7 +7,6 @@ per-row cost matrices. Everything is computed with probwrap's array core; no fil
 
 from __future__ import annotations
 
-import warnings
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -25,14 +24,13 @@ from ..decision import (
     realised_cost,
 )
 from ..metrics import (
-    bootstrap_interval,
     brier_score,
     classwise_calibration_error,
     expected_calibration_error,
     log_loss,
 )
 from ..shift import PriorEstimator, adjust_to_prior
-from ._content import MetricRow
+from ._common import MetricRow, NoteLog, Recommendation, ReportNote, metric_row
 
 __all__ = ["ActionRuleRow", "MulticlassReportContent", "collect_general_content"]
 
@@ -89,6 +87,8 @@ class MulticlassReportContent:
     n_unlabelled: int = 0
     prior_method: str = "em"
     confidence_level: float = 0.95
+    notes: list[ReportNote] = field(default_factory=list)
+    recommendation: Recommendation | None = None
 
     # the binary report's names, so that shared code (glance, demo summary) can read either
     @property
@@ -100,61 +100,17 @@ class MulticlassReportContent:
         return None
 
 
-def _proba_2d(values: Any, name: str) -> np.ndarray:
-    try:
-        p = np.asarray(values, dtype=float)
-    except (TypeError, ValueError) as exc:
-        raise ValueError(f"`{name}` must be numeric probabilities ({exc}).") from None
-    if p.ndim == 1:
-        p = np.column_stack([1.0 - p, p])
-    if p.ndim != 2 or p.shape[1] < 2:
-        raise ValueError(f"`{name}` must have shape (n, n_classes); got shape {p.shape}.")
-    if p.shape[0] == 0:
-        raise ValueError(f"`{name}` is empty.")
-    ok = np.isfinite(p) & (p >= 0) & (p <= 1)
-    if not ok.all():
-        row = int(np.flatnonzero(~ok.all(axis=1))[0])
-        raise ValueError(f"`{name}` must hold probabilities in [0, 1]; row {row} holds "
-                         f"{p[row].tolist()}.")
-    sums = p.sum(axis=1)
-    if np.any(np.abs(sums - 1.0) > 1e-6):
-        row = int(np.flatnonzero(np.abs(sums - 1.0) > 1e-6)[0])
-        raise ValueError(f"`{name}` rows must sum to one; row {row} sums to {sums[row]!r}.")
-    return p
-
-
-def _class_index(y: Any, classes: np.ndarray, name: str) -> np.ndarray:
-    arr = np.asarray(y)
-    if arr.ndim != 1:
-        raise ValueError(f"`{name}` must be 1-d; got shape {arr.shape}.")
-    unknown = ~np.isin(arr, classes)
-    if unknown.any():
-        row = int(np.flatnonzero(unknown)[0])
-        raise ValueError(f"`{name}` row {row} holds {arr[row]!r}, not among the classes "
-                         f"{classes.tolist()}.")
-    order = np.argsort(classes, kind="stable")
-    return order[np.searchsorted(classes[order], arr)].astype(np.intp)
-
-
-def _metric_rows(y, p, w, n_bins, n_resamples, level, seed) -> list[MetricRow]:
+def _metric_rows(y, p, w, n_bins, n_resamples, level, seed, notes) -> list[MetricRow]:
     specs = [
         ("log_loss", "log loss (multiclass)", log_loss, {}, "0 (lower is better)"),
         ("brier", "Brier score (sum over classes)", brier_score, {}, "0 (lower is better)"),
-        ("ece_top", f"top-label calibration error ({n_bins} equal-width bins)",
+        ("ece_top", f"top-label calibration error ({n_bins} equal-width bins, bias-corrected)",
          expected_calibration_error, {"n_bins": n_bins}, "0"),
-        ("ece_classwise", f"classwise calibration error ({n_bins} bins per class)",
-         classwise_calibration_error, {"n_bins": n_bins}, "0"),
+        ("ece_classwise", f"classwise calibration error ({n_bins} bins per class, "
+         "bias-corrected)", classwise_calibration_error, {"n_bins": n_bins}, "0"),
     ]
-    rows = []
-    for key, label, fn, kw, ideal in specs:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            res = bootstrap_interval(fn, y, p, sample_weight=w, n_resamples=n_resamples,
-                                     confidence_level=level, random_state=seed, **kw)
-        rows.append(MetricRow(key, label, float(res.statistic),
-                              float(res.confidence_interval.low),
-                              float(res.confidence_interval.high), ideal))
-    return rows
+    return [metric_row(notes, key, label, fn, y, p, w, ideal, n_resamples, level, seed, **kw)
+            for key, label, fn, kw, ideal in specs]
 
 
 def _shares(actions: np.ndarray, n_actions: int, w: np.ndarray | None) -> np.ndarray:
@@ -203,6 +159,7 @@ def collect_general_content(
     confidence_level: float,
     rng: Any,
     title: str,
+    progress: Any = None,
 ) -> MulticlassReportContent:
     """The numbers of a multiclass and/or multi-action report (see ``write_report``)."""
     n, k = proba.shape
@@ -212,11 +169,18 @@ def collect_general_content(
     counts = np.bincount(y_index, weights=w, minlength=k)
     if np.count_nonzero(counts) < 2:
         raise ValueError("The labels must contain at least two classes to assess calibration.")
+    def step(name: str, done: int, total: int = 4) -> None:
+        if progress is not None:
+            progress(name, done, total)
+
+    notes = NoteLog()
+    step("calibration metrics", 0)
     seed = int(rng.randint(2**31 - 1))
     content = MulticlassReportContent(
         title=title, n_rows=n, n_classes=k, class_names=class_names,
         class_shares=counts / counts.sum(), y_true=y_index, y_prob=proba, sample_weight=w,
-        metrics=_metric_rows(y_index, proba, w, n_bins, n_resamples, confidence_level, seed),
+        metrics=_metric_rows(y_index, proba, w, n_bins, n_resamples, confidence_level, seed,
+                             notes),
         n_bins=n_bins, confidence_level=confidence_level,
     )
     if calib is not None:
@@ -224,6 +188,7 @@ def collect_general_content(
         content.method_scores = getattr(calib, "method_scores_", None)
 
     # -- costs and actions -------------------------------------------------------------------
+    step("decision rules", 1)
     policy_costs = None
     if policy is not None and costs is None and row_costs is None:
         if getattr(policy, "cost_matrix_", None) is not None:
@@ -271,6 +236,7 @@ def collect_general_content(
         raise ValueError("`capacity` needs costs (`costs` or `row_costs`).")
 
     # -- priors ------------------------------------------------------------------------------
+    step("class shares", 2)
     q = unlabelled_proba
     if q is not None:
         content.n_unlabelled = int(q.shape[0])
@@ -286,9 +252,7 @@ def collect_general_content(
         est = PriorEstimator(n_resamples=n_resamples, confidence_level=confidence_level,
                              random_state=int(rng.randint(2**31 - 1)))
         est.fit(proba, y_index, w)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            res = est.estimate(q)
+        res = notes.compute("prevalence", "estimated class shares", est.estimate, q)
         content.source_prior = np.asarray(est.source_prior_, dtype=float)
         content.target_prior = np.asarray(res.prior, dtype=float)
         content.target_interval = res.interval
@@ -298,6 +262,10 @@ def collect_general_content(
             and np.all(content.source_prior > 0) and np.all(content.target_prior > 0)):
         _target_columns(content, proba, y_index, w, matrix, per_row, q, rule_fns, q_costs,
                         X_unlabelled, policy is not None)
+    if content.rules:
+        _recommend_general(content, proba, q, q_costs, notes)
+    content.notes = notes.notes
+    step("done", 4)
     return content
 
 
@@ -339,14 +307,16 @@ def _rules(content, proba, y_index, w, matrix, per_row, policy, policy_costs, X,
             acts = policy.predict(_rows)
             return np.array([index[str(a)] for a in acts], dtype=np.intp)
 
-        content.rule_source = (f"the fitted CostPolicyWrapper (strategy={policy.strategy!r}"
-                               + (", within its capacity)" if policy.capacity is not None
-                                  else ")"))
+        content.rule_source = (
+            "the fitted cost policy ("
+            + ("class offsets tuned on held-out predictions" if policy.strategy == "tuned"
+               else "least expected cost" if policy.strategy == "bayes" else "fixed rule")
+            + (", within its capacity)" if policy.capacity is not None else ")"))
         offsets = getattr(policy, "class_offsets_", None)
         content.class_offsets = None if offsets is None else np.asarray(offsets, dtype=float)
         b = getattr(policy, "action_budget_", None)
         content.budget_threshold = None if b is None else float(b.saving_threshold)
-        specs.append(("chosen", "fitted policy", chosen))
+        specs.append(("chosen", "the fitted cost policy", chosen))
         if budget is not None:
             specs.append(("bayes_capacity", "Bayes actions within capacity (filled on these rows)",
                           bayes_budget))
@@ -432,3 +402,44 @@ def _target_columns(content, proba, y_index, w, matrix, per_row, q, rule_fns, q_
         target_shares=_shares(acts_q, n_act, None),
         target_expected_cost=float(E[rows, acts_q].mean()),
     ))
+
+
+def _recommend_general(content, proba, q, q_costs, notes) -> None:
+    """The rule to use now: the rule in use, or the Bayes actions moved to the new priors when
+    the class shares have moved; filled within the capacity on the rows it will act on."""
+    rows = {r.key: r for r in content.rules}
+    row = rows["chosen"]
+    reasons = [f"The rule in use is {content.rule_source}."]
+    basis = "labelled"
+    if "adapted" in rows and content.shift_pvalue is not None and content.shift_pvalue < 0.01:
+        row = rows["adapted"]
+        reasons.append(f"The class shares of the unlabelled rows have moved (shift test p = "
+                       f"{content.shift_pvalue:.2g}), so the probabilities are moved to the "
+                       "estimated shares before the least expected cost action is taken "
+                       "(Saerens et al. 2002).")
+    elif content.shift_pvalue is not None:
+        reasons.append("The shift test does not reject unchanged class shares at the 1% level.")
+    shares = row.shares
+    cost = row.mean_cost
+    if row.target_shares is not None:
+        basis = "unlabelled"
+        shares, cost = row.target_shares, row.target_expected_cost
+    within = None
+    if content.capacity is not None:
+        j, cap = content.capacity
+        within = bool(shares[j] <= cap * (1 + 1e-12))
+        if not within:
+            reasons.append(
+                f"It gives “{content.action_names[j]}” to {100 * shares[j]:.1f}% of "
+                f"the {basis} rows, above the capacity of {100 * cap:.1f}%: fill that action "
+                "up to the capacity with the rows it saves most on, e.g. the row "
+                f"“{rows['bayes_capacity'].label}”." if "bayes_capacity" in rows
+                else f"It gives “{content.action_names[j]}” to "
+                f"{100 * shares[j]:.1f}% of the {basis} rows, above the capacity of "
+                f"{100 * cap:.1f}%: fill that action up to the capacity with the rows it saves "
+                "most on instead.")
+    content.recommendation = Recommendation(
+        key=row.key, name=row.label, cutoff=None, reasons=reasons,
+        expected_cost=float(cost), acted_share=float(1.0 - shares[0]), basis=basis,
+        within_capacity=within, action_shares=np.asarray(shares, dtype=float),
+    )

@@ -7,7 +7,16 @@ from typing import Any
 import numpy as np
 
 from ._general import MulticlassReportContent
-from ._html import _figure, _num, _share, _text, figure_to_svg
+from ._html_parts import (
+    _figure,
+    _num,
+    _share,
+    _text,
+    ece_note,
+    figure_to_svg,
+    metric_rows_html,
+    notes_box,
+)
 
 __all__ = ["general_figures", "general_sections", "general_glance"]
 
@@ -41,11 +50,7 @@ def general_figures(c: MulticlassReportContent) -> dict[str, str]:
 
 def _calibration(c: MulticlassReportContent, figures: dict[str, str]) -> str:
     level = f"{c.confidence_level:.0%}"
-    rows = "".join(
-        f'<tr data-metric="{m.key}"><td>{_text(m.label)}</td>{_num(m.value)}{_num(m.low)}'
-        f"{_num(m.high)}<td>{_text(m.ideal)}</td></tr>"
-        for m in c.metrics
-    )
+    rows = metric_rows_html(c)
     shares = "".join(
         f'<tr data-item="class:{j}"><td>{_text(name)}</td>{_share(c.class_shares[j])}</tr>'
         for j, name in enumerate(c.class_names)
@@ -61,9 +66,9 @@ def _calibration(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         f"<tbody>{rows}</tbody></table>",
         '<p class="pw-note">The top-label error bins each row by its largest probability and '
         "compares it with how often that class occurred (Guo et al. 2017); the classwise error "
-        "averages the one-vs-rest binned error of every class (Kull et al. 2019). Binned errors "
-        "are biased upwards in small samples and in resamples, so an interval can lie above "
-        "the value itself.</p>",
+        "averages the one-vs-rest binned error of every class (Kull et al. 2019).</p>",
+        ece_note(c),
+        notes_box([n for n in c.notes if n.key.startswith("metric:")], "notes-calibration"),
     ]
     if c.calibration_method is not None:
         parts.append(f"<p>Calibration map in use: <b>{_text(c.calibration_method)}</b>.</p>")
@@ -136,7 +141,10 @@ def _decisions(c: MulticlassReportContent, figures: dict[str, str]) -> str:
     )
     rows = []
     for r in c.rules:
-        cls = ' class="pw-chosen"' if r.key == "chosen" else ""
+        rec = c.recommendation is not None and r.key == c.recommendation.key
+        cls = " ".join(k for k, on in (("pw-chosen", r.key == "chosen"),
+                                       ("pw-recommended", rec)) if on)
+        cls = f' class="{cls}"' if cls else ""
         cells = [f"<td>{_text(r.label)}</td>", _num(r.mean_cost)]
         cells += [_share(s) for s in r.shares]
         if c.capacity is not None:
@@ -161,7 +169,7 @@ def _decisions(c: MulticlassReportContent, figures: dict[str, str]) -> str:
     parts.append(
         '<p class="pw-note">Mean cost per row is the realised cost on the labelled rows of '
         "this report. A rule tuned on these same rows is optimistic there; prefer held-out or "
-        "later rows for the comparison."
+        "later rows for the comparison. The row marked &#9654; is the recommended rule."
         + (" The unlabelled column uses the posteriors re-weighted to the estimated new class "
            "shares (expected, not realised, cost)." if target else "")
         + "</p>"
@@ -212,6 +220,7 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         f"<p>Estimated from {c.n_unlabelled or 'the'} unlabelled rows, assuming only the class "
         f"shares changed (prior shift). {verdict}</p>"
     )
+    parts.append(notes_box([n for n in c.notes if n.key == "prevalence"], "notes-prevalence"))
     if "class_prior" in figures:  # drawn with matplotlib only (the plot extra)
         parts.append(_figure(
             "fig-class-prior", figures["class_prior"],

@@ -2,12 +2,7 @@
 
 from __future__ import annotations
 
-import html
-import io
-import re
 from typing import Any
-
-import numpy as np
 
 from .. import __version__
 from ..plot import (
@@ -16,7 +11,19 @@ from ..plot import (
     PrevalenceDriftDisplay,
     ReliabilityDiagram,
 )
-from ._content import ReportContent
+from ._content import BAYES_NAME, HALF_NAME, ReportContent
+from ._general_html import general_figures, general_glance, general_sections
+from ._html_parts import (
+    _figure,
+    _num,
+    _share,
+    _text,
+    ece_note,
+    figure_to_svg,
+    metric_rows_html,
+    notes_box,
+    recommendation_box,
+)
 
 __all__ = ["render_html", "figure_to_svg", "CAUTIONS"]
 
@@ -70,56 +77,22 @@ figure svg { max-width:100%; height:auto; display:block; background:#fff;
              border:1px solid var(--rule); }
 figcaption { font-size:.8rem; margin-top:.3rem; }
 .pw-note { font-size:.82rem; color:#4a5561; }
+.pw-notes { background:#fff7e6; border:1px solid #e0b45a; padding:.4rem .9rem; margin:.6rem 0;
+             font-size:.82rem; }
+.pw-notes h3 { font-size:.9rem; margin:.2rem 0; }
+.pw-notes ul { margin:.2rem 0; padding-left:1.2rem; }
+.pw-recommend { background:#fff; border:2px solid var(--accent); margin:1rem 0;
+                padding:.6rem 1.2rem; }
+.pw-recommend h2 { margin:.2rem 0 .4rem; }
+tr.pw-recommended td:first-child::before { content:"\\25B6  "; color:var(--accent); }
+sup.pw-mark a { color:var(--warm); text-decoration:none; }
 footer { text-align:center; font-size:.75rem; color:#6b7480; padding:1rem; }
 """
 
 
-def figure_to_svg(figure: Any, key: str) -> str:
-    """The figure as an inline ``<svg>`` element (text drawn as paths, ids unique per key)."""
-    import matplotlib
-
-    with matplotlib.rc_context({"svg.fonttype": "path", "svg.hashsalt": f"probwrap-{key}"}):
-        buf = io.StringIO()
-        figure.savefig(buf, format="svg", facecolor="white")
-    text = buf.getvalue()
-    svg = text[text.index("<svg"):]
-    # several figures share one page: prefix every id and every reference to one
-    svg = re.sub(r'\bid="([^"]+)"', lambda m: f'id="{key}-{m.group(1)}"', svg)
-    svg = re.sub(r'url\(#([^)]+)\)', lambda m: f"url(#{key}-{m.group(1)})", svg)
-    return re.sub(r'href="#([^"]+)"', lambda m: f'href="#{key}-{m.group(1)}"', svg)
-
-
-def _num(value: float | None, digits: int = 4) -> str:
-    """A table cell holding a number, with the full value in ``data-value``."""
-    if value is None or (isinstance(value, float) and not np.isfinite(value)):
-        return '<td data-value="">&ndash;</td>'
-    return f'<td data-value="{float(value)!r}">{float(value):.{digits}f}</td>'
-
-
-def _share(value: float | None) -> str:
-    if value is None:
-        return '<td data-value="">&ndash;</td>'
-    return f'<td data-value="{float(value)!r}">{100 * float(value):.1f}%</td>'
-
-
-def _text(value: Any) -> str:
-    return html.escape(str(value))
-
-
-def _figure(fig_id: str, svg: str, caption: str) -> str:
-    return (
-        f'<figure class="pw-figure" id="{fig_id}">{svg}'
-        f"<figcaption>{_text(caption)}</figcaption></figure>"
-    )
-
-
 def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
     level = f"{c.confidence_level:.0%}"
-    rows = "".join(
-        f'<tr data-metric="{m.key}"><td>{_text(m.label)}</td>{_num(m.value)}{_num(m.low)}'
-        f"{_num(m.high)}<td>{_text(m.ideal)}</td></tr>"
-        for m in c.metrics
-    )
+    rows = metric_rows_html(c)
     parts = [
         '<section id="calibration"><h2><span class="pw-num">1</span>Calibration</h2>',
         f"<p>Measured on {c.n_rows} labelled rows with an observed prevalence of "
@@ -128,8 +101,8 @@ def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
         '<table id="calibration-metrics"><thead><tr><th>metric</th><th>value</th>'
         f"<th>{level} low</th><th>{level} high</th><th>ideal</th></tr></thead>"
         f"<tbody>{rows}</tbody></table>",
-        '<p class="pw-note">The binned calibration error is biased upwards in small samples and '
-        "in resamples, so its bootstrap interval can lie above the value itself.</p>",
+        ece_note(c),
+        notes_box([n for n in c.notes if n.key.startswith("metric:")], "notes-calibration"),
     ]
     if c.calibration_method is not None:
         parts.append(
@@ -175,8 +148,9 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
             if c.capacity is not None else "no capacity limit"
         )
         parts.append(
-            f'<p id="chosen-rule">Rule: <b>{a1}</b> when the probability exceeds the cutoff '
-            f'<b data-value="{c.chosen_cutoff!r}">{c.chosen_cutoff:.4f}</b>, chosen by '
+            f'<p id="chosen-rule">Highlighted below: <b>{a1}</b> when the probability exceeds '
+            f"the {_text(c.chosen_name)} "
+            f'<b data-value="{c.chosen_cutoff!r}">{c.chosen_cutoff:.4f}</b>, '
             f"{_text(c.cutoff_source)}; {cap}."
         )
         if c.chosen_interval is not None:
@@ -188,23 +162,30 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
             )
         if c.plugin is not None:
             parts.append(
-                f" With calibrated probabilities the Bayes plug-in cutoff "
+                f" With calibrated probabilities the {BAYES_NAME} "
                 f"(c<sub>fp</sub> &minus; c<sub>tn</sub>) / ((c<sub>fp</sub> &minus; "
                 f"c<sub>tn</sub>) + (c<sub>fn</sub> &minus; c<sub>tp</sub>)) is "
-                f'<span id="plugin-cutoff" data-value="{c.plugin!r}">{c.plugin:.4f}</span>.'
+                f'<span id="plugin-cutoff" data-value="{c.plugin!r}">{c.plugin:.4f}</span>. '
+                "It needs only the costs; the searched or tuned cutoff also corrects for "
+                "miscalibration but carries the noise of the search. The recommendation at the "
+                "top says which to use on these data and why."
             )
         parts.append("</p>")
         target = c.rules and c.rules[0].target_expected_cost is not None
         head = (
             "<tr><th>rule</th><th>cutoff</th><th>mean cost per row</th><th>share acted on</th>"
-            + ("<th>within capacity</th>" if c.capacity is not None else "")
+            + (("<th>within capacity (unlabelled rows)</th>" if target
+                else "<th>within capacity</th>") if c.capacity is not None else "")
             + ("<th>share acted on (unlabelled)</th><th>expected cost (unlabelled)</th>"
                if target else "")
             + "</tr>"
         )
         body = []
         for r in c.rules:
-            cls = ' class="pw-chosen"' if r.key == "chosen" else ""
+            rec = c.recommendation is not None and r.key == c.recommendation.key
+            cls = (' class="pw-chosen pw-recommended"' if rec and r.key == "chosen" else
+                   ' class="pw-chosen"' if r.key == "chosen" else
+                   ' class="pw-recommended"' if rec else "")
             cells = [f"<td>{_text(r.label)}</td>", _num(r.cutoff), _num(r.mean_cost),
                      _share(r.flagged_share)]
             if c.capacity is not None:
@@ -219,15 +200,20 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
         parts.append(
             '<p class="pw-note">Mean cost per row is the realised cost on the labelled rows of '
             "this report. A cutoff searched on these same rows is optimistic there; prefer "
-            "held-out or later rows for the comparison."
+            "held-out or later rows for the comparison. The highlighted row is the "
+            f"{_text(c.chosen_name)}; the row marked &#9654; is the recommended rule."
             + (" The unlabelled columns use the posteriors re-weighted to the estimated new "
-               "prevalence (expected, not realised, cost)." if target else "")
+               "prevalence (expected, not realised, cost); capacity is judged on the share "
+               "acted on there, the rows the rule will act on." if target else "")
             + "</p>"
         )
+        parts.append(notes_box(
+            [n for n in c.notes if n.key in ("plugin", "cutoff", "capacity")],
+            "notes-decisions"))
         parts.append(_figure(
             "fig-cost", figures["cost"],
-            "Mean cost per row at every cutoff, with the chosen cutoff, its bootstrap interval, "
-            "the Bayes plug-in cutoff and the 0.5 cutoff.",
+            f"Mean cost per row at every cutoff, with the {c.chosen_name}, its bootstrap "
+            f"interval, the {BAYES_NAME} and the {HALF_NAME}.",
         ))
     parts.append(_figure(
         "fig-decision-curve", figures["decision_curve"],
@@ -265,8 +251,9 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
             f'<tr data-item="shift_pvalue"><td>shift test p-value</td>'
             f'<td data-value="{c.shift_pvalue!r}">{c.shift_pvalue:.3g}</td></tr>'
             + (
-                f'<tr data-item="adapted_cutoff"><td>cutoff moved to the estimated prevalence'
-                f"</td>{_num(c.adapted_cutoff)}</tr>" if c.adapted_cutoff is not None else ""
+                f'<tr data-item="adapted_cutoff"><td>{_text(c.chosen_name)}, moved to the '
+                f"estimated prevalence</td>{_num(c.adapted_cutoff)}</tr>"
+                if c.adapted_cutoff is not None else ""
             )
             + "</tbody></table>"
         )
@@ -279,6 +266,8 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
             f"<p>Estimated from {c.n_unlabelled or 'the'} unlabelled rows, assuming only the "
             f"class shares changed (prior shift). {verdict}</p>"
         )
+        parts.append(notes_box(
+            [n for n in c.notes if n.key in ("prevalence", "batches")], "notes-prevalence"))
         if "prevalence" in figures:
             parts.append(_figure(
                 "fig-prevalence", figures["prevalence"],
@@ -300,14 +289,14 @@ def _cautions_section() -> str:
 
 def _glance(c: Any) -> str:
     if getattr(c, "kind", "binary") == "general":
-        from ._general_html import general_glance
-
         items = general_glance(c)
         li = "".join(f"<li>{_text(k)}<b>{_text(v)}</b></li>" for k, v in items)
         return f'<ul class="pw-glance" id="glance">{li}</ul>'
     items = [("labelled rows", f"{c.n_rows}"), ("observed prevalence", f"{c.prevalence:.4f}")]
-    if c.chosen_cutoff is not None:
-        items.append(("chosen cutoff", f"{c.chosen_cutoff:.4f}"))
+    if c.recommendation is not None and c.recommendation.cutoff is not None:
+        items.append(("recommended cutoff", f"{c.recommendation.cutoff:.4f}"))
+    elif c.chosen_cutoff is not None:
+        items.append((c.chosen_name, f"{c.chosen_cutoff:.4f}"))
     if c.target_prevalence is not None:
         items.append(("estimated new prevalence", f"{c.target_prevalence:.4f}"))
     li = "".join(f"<li>{_text(k)}<b>{_text(v)}</b></li>" for k, v in items)
@@ -330,8 +319,6 @@ def make_figures(c: Any) -> dict[str, str]:
 
         return builtin_figures(c)
     if getattr(c, "kind", "binary") == "general":
-        from ._general_html import general_figures
-
         return general_figures(c)
     figs: dict[str, str] = {}
     rel = ReliabilityDiagram.from_predictions(
@@ -345,11 +332,17 @@ def make_figures(c: Any) -> dict[str, str]:
         ).plot()
         if c.chosen_cutoff != disp.cutoff:
             disp.chosen_line_.set_xdata([c.chosen_cutoff, c.chosen_cutoff])
+        # the legend names the cutoff as the table and the text do
+        disp.chosen_line_.set_label(f"{c.chosen_name} {c.chosen_cutoff:.3f}")
+        disp.ax_.legend(fontsize=7, frameon=False, loc="best")
         figs["cost"] = figure_to_svg(disp.figure_, "cost")
     dc = DecisionCurveDisplay.from_predictions(
         c.y_true, c.y_prob, sample_weight=c.sample_weight, pos_label=1.0,
         marked_threshold=c.chosen_cutoff,
     )
+    if dc.marked_line_ is not None:
+        dc.marked_line_.set_label(f"{c.chosen_name} {c.chosen_cutoff:.3f}")
+        dc.ax_.legend(fontsize=7, frameon=False, loc="upper right")
     figs["decision_curve"] = figure_to_svg(dc.figure_, "dc")
     if c.batch_table is not None:
         pd_ = PrevalenceDriftDisplay.from_table(
@@ -362,8 +355,6 @@ def make_figures(c: Any) -> dict[str, str]:
 def render_html(c: Any, figures: dict[str, str]) -> str:
     """The complete page."""
     if getattr(c, "kind", "binary") == "general":
-        from ._general_html import general_sections
-
         body = general_sections(c, figures)
     else:
         body = (_calibration_section(c, figures) + _decision_section(c, figures)
@@ -376,9 +367,12 @@ def render_html(c: Any, figures: dict[str, str]) -> str:
         f"<p>Calibration, decision rule and prevalence &middot; probwrap {__version__}</p>"
         "</header>"
         '<nav class="pw-nav"><a href="#calibration">Calibration</a>'
-        '<a href="#decisions">Decisions</a><a href="#prevalence">Prevalence</a>'
+        '<a href="#decisions">Decisions</a><a href="#prevalence">'
+        + ("Class shares" if getattr(c, "kind", "binary") == "general" else "Prevalence")
+        + "</a>"
         '<a href="#cautions">Cautions</a></nav><main>'
         + _glance(c)
+        + recommendation_box(c)
         + body
         + _cautions_section()
         + "</main><footer>Written by probwrap. Self-contained: no scripts, no external "

@@ -8,11 +8,9 @@ percentile interval as resampling the rows in memory, with memory ``n_replicates
 
 from __future__ import annotations
 
-import warnings
 from typing import Any
 
 import numpy as np
-from sklearn.exceptions import ConvergenceWarning
 
 from ._tally import ScoreTally
 
@@ -116,15 +114,18 @@ def tally_prior_interval(
     ``estimator`` is a fitted :class:`probwrap.shift.PriorEstimator` (fitted on ``source``'s
     rows when ``source`` is given, on in-memory rows otherwise). ``target_proba`` and
     ``target_weight`` are the unlabelled rows the point estimate used (``target``'s bins when
-    ``target`` is given). In replicate ``b`` every original row — labelled and unlabelled —
-    counts with its weight times a Poisson(1) draw: from the tallies' replicates for tallied
-    rows, drawn here (from ``default_rng([seed, 2 or 3])``) for in-memory rows. With
-    ``resample_source`` the calibration, source prior and confusion matrices are re-fitted per
-    replicate, as the in-memory bootstrap does. The percentile interval is then widened, as in
-    memory, to contain the Clopper-Pearson interval of the target's effective number of rows.
-    Returns shape (k, 2).
+    ``target`` is given); ``prior`` is the unpenalised estimate the interval is built around.
+    In replicate ``b`` every original row — labelled and unlabelled — counts with its weight
+    times a Poisson(1) draw: from the tallies' replicates for tallied rows, drawn here (from
+    ``default_rng([seed, 2 or 3])``) for in-memory rows. With ``resample_source`` the
+    calibration (one Newton step from the fitted one), source prior and confusion matrices
+    are re-estimated per replicate, as in memory (:meth:`PriorEstimator.estimate`). The
+    interval is the bias-corrected percentile interval (BCa without acceleration: a tally's
+    bins are not rows, so there is no row jackknife). Replicates in which a class vanished
+    from the labelled rows are dropped, counted in ``estimator._last_dropped`` and reported
+    by a warning. Returns shape (k, 2).
     """
-    from ..shift import binomial_interval
+    from ..shift._estimator import _interval_from_draws
 
     sp, sy, sw_rows = estimator._src
     k = estimator.n_classes_
@@ -138,39 +139,17 @@ def tally_prior_interval(
     if target is not None:
         B = min(B, target.n_replicates)
         tgt_draw = target.replicate_bin_weights().__getitem__
-        n_eff = target.effective_rows
     else:
         tgt_draw = _row_replicates(target_weight, B, [seed, 3])
-        n_eff = float(target_weight.sum() ** 2 / np.sum(target_weight**2))
     if B < 1:
         raise ValueError("The bootstrap needs replicates (n_replicates > 0).")
-    base = (estimator.source_prior_, estimator.confusion_, estimator.soft_confusion_)
-    p_cal = estimator.calibrate(target_proba)
-    init = prior if estimator.method == "em" and np.all(prior > 0) else None
-    draws = []
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)
-        warnings.simplefilter("ignore", UserWarning)
-        for b in range(B):
-            src, hard, soft = base
-            pt = p_cal
-            ws = src_draw(b)
-            tw = tgt_draw(b)
-            if estimator.resample_source:
-                if np.any(np.bincount(sy, weights=ws, minlength=k) <= 0):
-                    continue  # a class vanished from this replicate: its prior is undefined
-                cal, src, hard, soft = estimator._summarise(sp, sy, ws, estimator.calibrator_)
-                pt = target_proba if cal is None else cal.predict(target_proba)
-            if tw.sum() <= 0:  # pragma: no cover - needs every Poisson draw to be zero
-                continue
-            draws.append(estimator._point(pt, tw, src, hard, soft, init=init).prior)
-    if not draws:
-        return np.column_stack([np.zeros(k), np.ones(k)])
-    alpha = 1.0 - estimator.confidence_level
-    lo, hi = np.quantile(np.asarray(draws), [alpha / 2, 1 - alpha / 2], axis=0)
-    interval = np.column_stack([lo, hi])
-    if np.isfinite(n_eff):
-        cp = binomial_interval(prior, n_eff, estimator.confidence_level)
-        interval[:, 0] = np.minimum(np.minimum(interval[:, 0], cp[:, 0]), prior)
-        interval[:, 1] = np.maximum(np.maximum(interval[:, 1], cp[:, 1]), prior)
-    return interval
+    if not estimator.resample_source:
+        def src_draw(b: int) -> None:
+            return None
+    draws, dropped = estimator.replicate_draws(
+        np.asarray(target_proba, dtype=float), src_draw, tgt_draw, B, np.asarray(prior, float)
+    )
+    estimator._last_dropped = dropped
+    return _interval_from_draws(
+        np.asarray(prior, dtype=float), draws, [], estimator.confidence_level, dropped, B, k
+    )

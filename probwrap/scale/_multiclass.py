@@ -9,7 +9,8 @@ the fits is a sum over rows computed per block and added on the client:
 - the source prior and the hard / soft confusion matrices: one pass;
 - EM: each iteration is one pass computing ``sum_i w_i normalise(p_i * prior / source)``;
 - BBSE / ACC: the target's mean (hard or soft) predicted-class distribution, one pass;
-- the likelihood-ratio test of "no shift": an EM run and one log-likelihood pass.
+- the two-sample score test of "no shift": the mean and covariance of the per-row scores, one
+  pass over the labelled and one over the unlabelled blocks.
 
 The client only ever holds k-vectors and k x k matrices. The arithmetic is that of
 :mod:`probwrap.shift` on the same rows, so results agree with the in-memory path up to the order
@@ -22,7 +23,6 @@ import warnings
 from typing import Any
 
 import numpy as np
-from scipy.stats import chi2
 from sklearn.exceptions import ConvergenceWarning
 
 from ._dask import _aligned_blocks, _import_dask, _persist, _reduce, _row_blocks
@@ -97,6 +97,28 @@ def _confusions(block, calibrator, k):
     return hard, soft
 
 
+def _score_sums(block, calibrator, src):
+    """Weighted sums of the per-row shift-test scores (see probwrap.shift.shift_score_test)."""
+    p, w = block[0], block[-1]
+    q = p / src
+    u = q[:, 1:] - q[:, :1]
+    return w @ u, (u * w[:, None]).T @ u
+
+
+def _class_score_sums(block, calibrator, src):
+    """Per-class weighted sums of the labelled rows' scores, weights and squared weights."""
+    p, _, y, w = block
+    if calibrator is not None:  # source blocks hold uncalibrated posteriors
+        p = calibrator.predict(p)
+    q = p / src
+    u = q[:, 1:] - q[:, :1]
+    k = src.shape[0]
+    onehot = np.eye(k)[y] * w[:, None]  # (n, k)
+    su = onehot.T @ u
+    suu = np.einsum("nc,ni,nj->cij", onehot, u, u)
+    return su, suu, onehot.sum(axis=0), (onehot * w[:, None]).sum(axis=0)
+
+
 def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     """Fit a :class:`probwrap.shift.PriorEstimator` from labelled multiclass Dask rows.
 
@@ -127,7 +149,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
         dask, [make(estimator, classes, b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
     )
     try:
-        class_weight, _ = _reduce(dask, _counts, parts, k)
+        class_weight, squared_weight = _reduce(dask, _counts, parts, k)
         total = float(class_weight.sum())
         if total <= 0:
             raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
@@ -141,6 +163,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             owner.method, calibration=owner.calibration, tol=owner.em_tol,
             max_iter=owner.em_max_iter, n_resamples=0,
             confidence_level=owner.confidence_level, random_state=owner.random_state,
+            prior_strength=owner.prior_strength,
         )
         est._check_params()
         cal = None
@@ -171,6 +194,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             cal.n_classes_ = k
             cal.converged_ = bool(converged)
         hard, soft = _reduce(dask, _confusions, parts, cal, k)
+        su, suu, sw, sww = _reduce(dask, _class_score_sums, parts, cal, class_weight / total)
     finally:
         parts.clear()  # release the persisted blocks on the workers
     est.n_classes_ = k
@@ -179,6 +203,18 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     est.confusion_ = hard / total
     est.soft_confusion_ = soft / total
     est._src = None
+    est.n_source_effective_ = total**2 / squared_weight
+    # stratified mean and covariance of the mean, as probwrap.shift._estimate._source_moments
+    prior = class_weight / total
+    mean = np.zeros(k - 1)
+    cov = np.zeros((k - 1, k - 1))
+    for c in range(k):
+        m_c = su[c] / sw[c]
+        c_c = suu[c] / sw[c] - np.outer(m_c, m_c)
+        n_c = sw[c] ** 2 / sww[c]
+        mean = mean + prior[c] * m_c
+        cov = cov + prior[c] ** 2 * c_c / max(n_c - 1.0, 1.0)
+    est._source_score = (mean, cov)
     owner.estimator_ = estimator
     owner.classes_ = classes
     if hasattr(estimator, "n_features_in_"):
@@ -202,22 +238,26 @@ def _means(block, k):
     return w @ p, hard, np.array([w.sum(), float(np.dot(w, w)), p.shape[0]])
 
 
-def _loglik(block, src, priors):
-    p, w = block
-    mix = (p / src) @ priors.T  # (n, number of priors)
-    return w @ np.log(np.maximum(mix, _TINY))
-
-
-def _em_dask(dask, parts, src, init, total, tol, max_iter):
+def _em_dask(dask, parts, src, init, total, tol, max_iter, pseudo=None, scale=1.0):
+    """EM of probwrap.shift.em_prior as reductions: same update (weights times ``scale``, plus
+    the Dirichlet pseudo-rows ``pseudo``) and the same stopping rule on the bound of the
+    distance to the fixed point; returns (prior, n_iter, converged, distance)."""
+    pseudo = np.zeros_like(src) if pseudo is None else pseudo
     prior = init.copy()
+    prev, dist = np.inf, np.inf
     for it in range(1, max_iter + 1):
-        new = _reduce(dask, _em_step, parts, prior / src) / total
+        new = (scale * _reduce(dask, _em_step, parts, prior / src) + pseudo) / (
+            scale * total + pseudo.sum()
+        )
         new = new / new.sum()
-        step = np.max(np.abs(new - prior))
+        step = float(np.max(np.abs(new - prior)))
         prior = new
-        if step < tol:
-            return prior, it, True
-    return prior, max_iter, False
+        rho = step / prev if prev > 0 else 0.0
+        dist = step * rho / (1.0 - rho) if rho < 1.0 else np.inf
+        if step == 0.0 or (dist <= tol and step <= tol):
+            return prior, it, True, (0.0 if step == 0.0 else dist)
+        prev = step
+    return prior, max_iter, False, dist
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None):
@@ -234,24 +274,24 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
     make = dask.delayed(_target_block, pure=True)
     parts = _persist(dask, [make(estimator, est.calibrator_, b, wb) for b, wb in zip(blocks, ws, strict=True)])
     try:
-        soft_mean, hard_mean, (total, _, n_rows) = _reduce(dask, _means, parts, k)
+        soft_mean, hard_mean, (total, squared, n_rows) = _reduce(dask, _means, parts, k)
         if total <= 0:
             raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
         src = est.source_prior_
         method = est.method
-        n_iter, converged = 0, True
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", ConvergenceWarning)
-            test_prior, _, _ = _em_dask(dask, parts, src, src.copy(), total, 1e-8, 10_000)
+        n_iter, converged, distance = 0, True, 0.0
+        n_eff = total**2 / squared
+        su, suu = _reduce(dask, _score_sums, parts, None, src)
         if method == "em":
-            prior, n_iter, converged = _em_dask(
-                dask, parts, src, src.copy(), total, float(est.tol), int(est.max_iter)
+            prior, n_iter, converged, distance = _em_dask(
+                dask, parts, src, src.copy(), total, float(est.tol), int(est.max_iter),
+                pseudo=float(est.prior_strength) * src, scale=n_eff / total,
             )
             if not converged:
                 warnings.warn(
-                    f"EM prior estimation did not converge within max_iter={est.max_iter} "
-                    f"iterations (tol={est.tol}); the last iterate is returned. Raise `max_iter` "
-                    "or `tol`.",
+                    f"Prior estimation did not converge within max_iter={est.max_iter} "
+                    f"iterations: the last iterate may be up to {distance:.3g} from the "
+                    f"optimum (tol={est.tol}). Raise `max_iter`, or use `prior_strength`.",
                     ConvergenceWarning,
                     stacklevel=3,
                 )
@@ -266,10 +306,14 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             else:
                 point = acc_prior(mu[None, :], conf, soft=True)
             prior = point.prior
-        ll = _reduce(dask, _loglik, parts, src, np.vstack([test_prior, src]))
     finally:
         parts.clear()
-    stat = max(2.0 * float(ll[0] - ll[1]), 0.0)
+    from ..shift._estimate import _score_stat_moments
+
+    mean = su / total
+    stat, pvalue = _score_stat_moments(
+        (mean, suu / total - np.outer(mean, mean), n_eff), getattr(est, "_source_score", None), k
+    )
     return PriorEstimate(
         prior=prior,
         method=method,
@@ -278,5 +322,6 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         n_rows=int(n_rows),
         interval=None,
         shift_statistic=stat,
-        shift_pvalue=float(chi2.sf(stat, k - 1)),
+        shift_pvalue=pvalue,
+        distance=float(distance),
     )

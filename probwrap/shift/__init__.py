@@ -7,7 +7,9 @@ about scikit-learn estimators. :class:`probwrap.PriorShiftWrapper` is the estima
 from ._adjust import adjust_to_prior, check_prior, project_to_simplex, shift_cutoff
 from ._calibration import BiasCorrectedScaling
 from ._estimate import (
+    BoundaryPriorWarning,
     PriorEstimate,
+    PriorNotIdentifiedWarning,
     ShiftTestResult,
     acc_prior,
     bbse_prior,
@@ -15,13 +17,22 @@ from ._estimate import (
     em_prior,
     heldout_confusion,
     prior_log_likelihood,
+    shift_score_test,
     shift_test,
 )
-from ._estimator import CALIBRATIONS, PRIOR_METHODS, PriorEstimator, prior_by_batch
+from ._estimator import CALIBRATIONS, INTERVALS, PRIOR_METHODS, PriorEstimator, prior_by_batch
+from ._interval import bca_interval, jackknife_acceleration, score_interval
 
 __all__ = [
     "BiasCorrectedScaling",
+    "BoundaryPriorWarning",
     "CALIBRATIONS",
+    "INTERVALS",
+    "PriorNotIdentifiedWarning",
+    "bca_interval",
+    "jackknife_acceleration",
+    "score_interval",
+    "shift_score_test",
     "PRIOR_METHODS",
     "PriorEstimate",
     "PriorEstimator",

@@ -23,7 +23,11 @@ __all__ = [
     "em_prior",
     "heldout_confusion",
     "prior_log_likelihood",
+    "shift_score_test",
     "shift_test",
+    "PriorNotIdentifiedWarning",
+    "BoundaryPriorWarning",
+    "kish_weights",
 ]
 
 
@@ -46,7 +50,19 @@ class PriorEstimate:
     interval : ndarray of shape (k, 2) or None
         Confidence interval per class, when requested.
     shift_statistic, shift_pvalue : float or None
-        Likelihood-ratio test of "no shift", when requested (see :func:`shift_test`).
+        Test of "no shift", when requested (see :func:`shift_score_test`).
+    distance : float
+        Certified bound on the distance (largest absolute difference of a class share) between
+        the returned prior and the exact optimum of the (penalised) likelihood: from the
+        bracket of the safeguarded Newton iteration for two classes, from the observed
+        contraction of the EM steps for more (0 for the closed-form estimators).
+    identified : bool
+        False when the estimator cannot tell the classes apart (an ill-conditioned confusion
+        matrix); ``prior`` is then the source prior and ``interval`` spans [0, 1].
+    n_dropped : int
+        Bootstrap resamples dropped because a class vanished from the labelled resample.
+    ml_prior : ndarray of shape (k,) or None
+        The plain maximum-likelihood prior (EM methods), which the interval is built around.
     """
 
     prior: np.ndarray
@@ -57,6 +73,10 @@ class PriorEstimate:
     interval: np.ndarray | None = None
     shift_statistic: float | None = None
     shift_pvalue: float | None = None
+    distance: float = 0.0
+    identified: bool = True
+    n_dropped: int = 0
+    ml_prior: np.ndarray | None = None
 
 
 @dataclass(frozen=True)
@@ -71,14 +91,48 @@ class ShiftTestResult:
         Upper tail of the chi-square distribution with ``df`` degrees of freedom.
     df : int
         ``k - 1``.
-    prior : ndarray of shape (k,)
-        The maximum-likelihood (EM) prior used in the statistic.
+    prior : ndarray of shape (k,) or None
+        The maximum-likelihood prior used in the statistic (None for the score test, which
+        needs no estimate).
     """
 
     statistic: float
     pvalue: float
     df: int
-    prior: np.ndarray
+    prior: np.ndarray | None = None
+
+
+class PriorNotIdentifiedWarning(UserWarning):
+    """The unlabelled rows cannot identify the class priors with this model.
+
+    Raised when the confusion matrix of ACC / PACC / BBSE is ill-conditioned (the classes'
+    predictions are nearly the same, for two classes the true- and false-positive rates are
+    within sampling error of each other): the estimator then returns the source prior with an
+    interval spanning [0, 1] instead of a confident-looking number.
+    """
+
+
+class BoundaryPriorWarning(UserWarning):
+    """A maximum-likelihood class share sits at (or next to) 0 or 1; the message says why."""
+
+
+def kish_weights(w: np.ndarray) -> np.ndarray:
+    """Weights rescaled to sum to Kish's effective sample size ``(sum w)^2 / sum w^2``.
+
+    Multiplying every weight by a constant leaves the result unchanged (Kish 1965, eq. 11.7.6
+    for the effective sample size; value recalled from the book, not re-derived here).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift._estimate import kish_weights
+    >>> kish_weights(np.array([2.0, 2.0, 2.0])).tolist()
+    [1.0, 1.0, 1.0]
+    """
+    total = float(w.sum())
+    if total <= 0:
+        return w
+    return w * (total / float(np.dot(w, w)))
 
 
 # -- shared input handling ---------------------------------------------------------------------
@@ -166,6 +220,142 @@ def heldout_confusion(
 
 
 # -- maximum likelihood by EM ------------------------------------------------------------------
+_TINY = np.finfo(float).tiny
+
+
+def _binary_solve(
+    q0: np.ndarray,
+    q1: np.ndarray,
+    w: np.ndarray,
+    pseudo: np.ndarray,
+    start: float,
+    tol: float,
+    max_iter: int,
+) -> tuple[float, int, bool, float]:
+    """Maximise ``sum w log(q0 + t (q1 - q0)) + a1 log t + a0 log(1 - t)`` over t in [0, 1].
+
+    The function is concave, so its derivative falls monotonically: a safeguarded Newton
+    iteration keeps a bracket ``[lo, hi]`` around the root of the derivative and falls back to
+    bisection whenever a Newton step leaves it. It stops once the bracket around the returned
+    point is narrower than ``tol`` (checked by evaluating the derivative ``tol / 2`` either
+    side), so ``distance`` bounds the error to the exact optimum. Returns
+    ``(t, n_iter, converged, distance)``.
+    """
+    a0, a1 = float(pseudo[0]), float(pseudo[1])
+    d = q1 - q0
+
+    def grad(t: float) -> tuple[float, float]:
+        with np.errstate(over="ignore"):  # at t = 0 or 1 a row may have no mass: g is then inf
+            r = d / np.maximum(q0 + t * d, _TINY)
+            g = float(w @ r)
+            h = -float(w @ (r * r))
+        if a1 > 0:
+            g += a1 / t
+            h -= a1 / (t * t)
+        if a0 > 0:
+            g -= a0 / (1.0 - t)
+            h -= a0 / ((1.0 - t) ** 2)
+        return g, h
+
+    lo, hi = 0.0, 1.0
+    if a1 <= 0 and grad(0.0)[0] <= 0:
+        return 0.0, 1, True, 0.0
+    if a0 <= 0 and grad(1.0)[0] >= 0:
+        return 1.0, 1, True, 0.0
+    t = min(max(float(start), 1e-12), 1.0 - 1e-12)
+    for it in range(1, max_iter + 1):
+        g, h = grad(t)
+        if g > 0:
+            lo = t
+        elif g < 0:
+            hi = t
+        else:
+            return t, it, True, 0.0
+        new = t - g / h if h < 0 else np.nan
+        if not (np.isfinite(new) and lo < new < hi):
+            new = 0.5 * (lo + hi)
+        if abs(new - t) <= 0.25 * tol or hi - lo <= tol:
+            # certify: the root lies within tol / 2 of `new` if the derivative changes sign there
+            left, right = max(new - 0.5 * tol, lo), min(new + 0.5 * tol, hi)
+            if left > lo:
+                if grad(left)[0] > 0:
+                    lo = left
+                else:
+                    hi = left
+            if right < hi:
+                if grad(right)[0] < 0:
+                    hi = right
+                else:
+                    lo = right
+            new = min(max(new, lo), hi)
+            dist = max(new - lo, hi - new)
+            if dist <= tol:
+                return new, it, True, dist
+        t = new
+    return t, max_iter, False, max(t - lo, hi - t)
+
+
+def _em_multi(
+    p: np.ndarray,
+    w: np.ndarray,
+    src: np.ndarray,
+    pseudo: np.ndarray,
+    init: np.ndarray,
+    tol: float,
+    max_iter: int,
+) -> tuple[np.ndarray, int, bool, float]:
+    """(Penalised) EM of Saerens et al. (2002); stops on a bound of the distance to the fixed point.
+
+    With step sizes ``s_m`` shrinking by the observed ratio ``rho = s_m / s_(m-1) < 1`` (EM
+    converges linearly near its fixed point; Dempster, Laird & Rubin 1977, section 3), the
+    remaining distance is at most ``s_m rho / (1 - rho)`` (a geometric series); EM stops when
+    that bound is below ``tol``. Returns ``(prior, n_iter, converged, distance)``.
+    """
+    ratio = p / src
+    total = float(w.sum() + pseudo.sum())
+    prior = init.copy()
+    prev = np.inf
+    dist = np.inf
+    for it in range(1, max_iter + 1):
+        num = ratio * prior
+        post = num / np.maximum(num.sum(axis=1, keepdims=True), _TINY)
+        new = (w @ post + pseudo) / total
+        new = new / new.sum()
+        step = float(np.max(np.abs(new - prior)))
+        prior = new
+        rho = step / prev if prev > 0 else 0.0
+        dist = step * rho / (1.0 - rho) if rho < 1.0 else np.inf
+        if step == 0.0 or (dist <= tol and step <= tol):
+            return prior, it, True, (0.0 if step == 0.0 else dist)
+        prev = step
+    return prior, max_iter, False, dist
+
+
+def _solve_prior(
+    p: np.ndarray,
+    w: np.ndarray,
+    src: np.ndarray,
+    init: np.ndarray,
+    tol: float,
+    max_iter: int,
+    strength: float = 0.0,
+) -> tuple[np.ndarray, int, bool, float]:
+    """Maximum-likelihood (``strength=0``) or MAP prior of unlabelled posteriors ``p``.
+
+    The penalty is a Dirichlet prior with parameters ``1 + strength * src`` (its mode is the
+    source prior), i.e. ``strength`` pseudo-rows with the source shares added to the rows'
+    weights ``w``. Two classes: safeguarded Newton on the concave log-likelihood; more: EM.
+    """
+    pseudo = float(strength) * src
+    if p.shape[1] == 2:
+        q = p / src
+        t, n_iter, ok, dist = _binary_solve(
+            q[:, 0], q[:, 1], w, pseudo, float(init[1]), tol, max_iter
+        )
+        return np.array([1.0 - t, t]), n_iter, ok, dist
+    return _em_multi(p, w, src, pseudo, init, tol, max_iter)
+
+
 def _em(
     p: np.ndarray,
     w: np.ndarray,
@@ -174,20 +364,9 @@ def _em(
     tol: float,
     max_iter: int,
 ) -> tuple[np.ndarray, int, bool]:
-    ratio = p / src
-    wn = w / w.sum()
-    prior = init.copy()
-    for it in range(1, max_iter + 1):
-        num = ratio * prior
-        den = num.sum(axis=1, keepdims=True)
-        post = num / np.maximum(den, np.finfo(float).tiny)
-        new = wn @ post
-        new = new / new.sum()
-        step = np.max(np.abs(new - prior))
-        prior = new
-        if step < tol:
-            return prior, it, True
-    return prior, max_iter, False
+    """Plain maximum likelihood (kept for callers that want the three-tuple)."""
+    prior, n_iter, ok, _ = _solve_prior(p, w, src, init, tol, max_iter)
+    return prior, n_iter, ok
 
 
 def em_prior(
@@ -198,10 +377,11 @@ def em_prior(
     init: Any = None,
     tol: float = 1e-6,
     max_iter: int = 1000,
+    prior_strength: float = 0.0,
 ) -> PriorEstimate:
-    r"""Maximum-likelihood class priors of unlabelled data by EM (Saerens et al. 2002).
+    r"""Maximum-likelihood (or shrunk) class priors of unlabelled data (Saerens et al. 2002).
 
-    With posteriors :math:`p_s(k \mid x_n)` learned under priors :math:`\pi^s`, each step
+    With posteriors :math:`p_s(k \mid x_n)` learned under priors :math:`\pi^s`, each EM step
     re-weights the posteriors to the current priors (eq. 2.4) and sets the new priors to the
     mean re-weighted posterior (eqs. 2.9-2.10 of Saerens, Latinne & Decaestecker 2002):
 
@@ -211,9 +391,21 @@ def em_prior(
             \frac{\frac{\pi^{(m)}_k}{\pi^s_k} p_s(k \mid x_n)}
                  {\sum_j \frac{\pi^{(m)}_j}{\pi^s_j} p_s(j \mid x_n)}
 
-    Each step increases the log-likelihood of the unlabelled rows
-    (:func:`prior_log_likelihood`). EM needs calibrated posteriors; calibrate the held-out
-    posteriors first (see :class:`BiasCorrectedScaling`).
+    Its fixed point maximises the log-likelihood of the unlabelled rows
+    (:func:`prior_log_likelihood`). For two classes that likelihood is a concave function of
+    one number, and it is maximised directly by a safeguarded Newton iteration (same optimum,
+    fewer steps); for more classes by EM.
+
+    ``prior_strength > 0`` adds a Dirichlet prior whose mode is the source prior, with
+    parameters ``1 + prior_strength * source_prior``: the MAP estimate, as if
+    ``prior_strength`` extra rows with exactly the source shares had been seen. Weights are
+    rescaled to sum to Kish's effective sample size first, so the result does not depend on
+    the scale of ``sample_weight``. The EM update becomes
+    :math:`\pi_k \propto \sum_n w_n r_{nk} + c\,\pi^s_k`.
+
+    The iteration stops when the estimate is certified to lie within ``tol`` of the exact
+    optimum (a derivative bracket for two classes; for more classes the remaining distance
+    bounded from the observed contraction of the steps). ``distance`` reports that bound.
 
     Parameters
     ----------
@@ -226,9 +418,12 @@ def em_prior(
     init : array-like of shape (k,), default=None
         Starting priors (default: the source priors).
     tol : float, default=1e-6
-        Stop when no prior moves by more than ``tol`` in one step.
+        Largest accepted distance to the optimum (per class share).
     max_iter : int, default=1000
-        Iteration cap; reaching it raises a :class:`~sklearn.exceptions.ConvergenceWarning`.
+        Iteration cap; reaching it raises a :class:`~sklearn.exceptions.ConvergenceWarning`
+        that states the distance reached.
+    prior_strength : float, default=0.0
+        Pseudo-rows of the Dirichlet prior centred on the source prior (0: maximum likelihood).
 
     Returns
     -------
@@ -250,16 +445,27 @@ def em_prior(
         raise ValueError(f"`tol` must be a positive number; got {tol!r}.")
     if not (isinstance(max_iter, (int, np.integer)) and max_iter >= 1):
         raise ValueError(f"`max_iter` must be a positive integer; got {max_iter!r}.")
+    if not (isinstance(prior_strength, (int, float)) and np.isfinite(prior_strength)
+            and prior_strength >= 0):
+        raise ValueError(
+            f"`prior_strength` must be a finite non-negative number; got {prior_strength!r}."
+        )
     _warn_empty_columns(w @ p, "predicted probability mass")
-    prior, n_iter, converged = _em(p, w, src, start, float(tol), int(max_iter))
+    prior, n_iter, converged, dist = _solve_prior(
+        p, kish_weights(w), src, start, float(tol), int(max_iter), float(prior_strength)
+    )
     if not converged:
         warnings.warn(
-            f"EM prior estimation did not converge within max_iter={max_iter} iterations "
-            f"(tol={tol}); the last iterate is returned. Raise `max_iter` or `tol`.",
+            f"Prior estimation did not converge within max_iter={max_iter} iterations: the "
+            f"last iterate may be up to {dist:.3g} from the optimum (tol={tol}). This happens "
+            "when a class share heads to 0; raise `max_iter`, or use `prior_strength`.",
             ConvergenceWarning,
             stacklevel=2,
         )
-    return PriorEstimate(prior=prior, method="em", n_iter=n_iter, converged=converged, n_rows=p.shape[0])
+    return PriorEstimate(
+        prior=prior, method="em", n_iter=n_iter, converged=converged, n_rows=p.shape[0],
+        distance=float(dist),
+    )
 
 
 def prior_log_likelihood(
@@ -299,13 +505,14 @@ def shift_test(
 ) -> ShiftTestResult:
     r"""Likelihood-ratio test that unlabelled rows have the source class priors.
 
-    The statistic is :math:`2\,[\ell(\hat\pi) - \ell(\pi^s)]` with :math:`\hat\pi` the EM
-    maximum-likelihood priors and :math:`\ell` the log-likelihood of :func:`prior_log_likelihood`;
-    under "no shift" it is asymptotically chi-square with ``k - 1`` degrees of freedom
-    (Saerens et al. 2002, section 2.3; Wilks 1938). The test treats the posteriors as exact:
-    it assumes they are calibrated under the source priors, and it ignores the sampling error of
-    the held-out rows they were calibrated on. Weights are frequency weights (the statistic
-    scales with their sum).
+    The statistic is :math:`2\,[\ell(\hat\pi) - \ell(\pi^s)]` with :math:`\hat\pi` the
+    maximum-likelihood priors and :math:`\ell` the log-likelihood of
+    :func:`prior_log_likelihood`; under "no shift" it is asymptotically chi-square with
+    ``k - 1`` degrees of freedom (Saerens et al. 2002, section 2.3; Wilks 1938). The test
+    treats the posteriors as exact: it ignores the sampling error of the labelled rows they
+    were calibrated on (:func:`shift_score_test` with ``source_proba`` accounts for it).
+    Weights are rescaled to sum to Kish's effective sample size, so the statistic does not
+    depend on their scale (with unit weights it is the plain statistic).
 
     Examples
     --------
@@ -320,28 +527,207 @@ def shift_test(
     p, w = _check_target(proba, sample_weight)
     k = p.shape[1]
     src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)
-        prior, _, _ = _em(p, w, src, src.copy(), tol, max_iter)
-    stat = 2.0 * (_loglik(p, w, src, prior) - _loglik(p, w, src, src))
-    # EM increases the likelihood from the source prior, so the statistic is >= 0 up to rounding.
+    wk = kish_weights(w)
+    prior, _, _, _ = _solve_prior(p, wk, src, src.copy(), tol, max_iter)
+    stat = 2.0 * (_loglik(p, wk, src, prior) - _loglik(p, wk, src, src))
+    # the optimum is at least as likely as the source prior, so the statistic is >= 0 up to rounding
     stat = max(stat, 0.0)
     return ShiftTestResult(statistic=stat, pvalue=float(chi2.sf(stat, k - 1)), df=k - 1, prior=prior)
 
 
+def _score_rows(p: np.ndarray, src: np.ndarray) -> np.ndarray:
+    """Per-row score of the prior log-likelihood at the source prior, in a basis of the simplex.
+
+    ``d/dt log sum_k pi_k p_k / pi^s_k`` along ``e_j - e_0`` at ``pi = pi^s`` is
+    ``p_j / pi^s_j - p_0 / pi^s_0`` (the mixture there equals 1).
+    """
+    q = p / src
+    return q[:, 1:] - q[:, :1]
+
+
+def _mean_cov(v: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray, float]:
+    wn = w / w.sum()
+    n_eff = float(w.sum() ** 2 / np.dot(w, w))
+    mean = wn @ v
+    c = v - mean
+    cov = (c * wn[:, None]).T @ c
+    return mean, cov, n_eff
+
+
+def shift_score_test(
+    proba: Any,
+    source_prior: Any,
+    *,
+    sample_weight: Any = None,
+    source_proba: Any = None,
+    source_sample_weight: Any = None,
+    source_y: Any = None,
+) -> ShiftTestResult:
+    r"""Score test that unlabelled rows have the source class priors; no estimate needed.
+
+    Each row's score of the prior log-likelihood at the source prior is
+    :math:`u_{nj} = p(j \mid x_n)/\pi^s_j - p(0 \mid x_n)/\pi^s_0` for
+    :math:`j = 1..k-1`. Under no shift its mean over the unlabelled rows is zero (Rao's score
+    test; Rao 1948). Given the labelled rows' posteriors ``source_proba``, the test compares
+    the mean score of the two samples instead — a two-sample comparison of means with separate
+    variances (Welch's form of the z-test; for two classes it equals statsmodels'
+    ``CompareMeans.ztest_ind(usevar="unequal")`` squared) — so the sampling error of the
+    labelled rows the posteriors were calibrated on is part of the test, not ignored. The
+    statistic :math:`\Delta^\top (\Sigma_t / (n_t - 1) + \Sigma_s / (n_s - 1))^{-1}
+    \Delta` is chi-square with ``k - 1`` degrees of freedom under no shift; ``n`` are Kish's
+    effective sample sizes, so the test does not depend on the scale of the weights.
+
+    Parameters
+    ----------
+    proba : array-like of shape (n, k)
+        Calibrated posteriors of the unlabelled rows.
+    source_prior : array-like of shape (k,)
+        Priors the posteriors were learned under.
+    sample_weight : array-like of shape (n,), default=None
+    source_proba : array-like of shape (m, k), default=None
+        Calibrated posteriors of the labelled rows (None: one-sample test, posteriors taken
+        as exact).
+    source_sample_weight : array-like of shape (m,), default=None
+    source_y : array-like of shape (m,), default=None
+        Class indices of the labelled rows. When given (and ``source_prior`` is their weighted
+        class shares), the labelled mean is the class-stratified mean
+        :math:`\sum_c \pi^s_c \bar u_c` and its variance the stratified
+        :math:`\sum_c (\pi^s_c)^2 s^2_c / (n_c - 1)`: the class shares of the labelled rows
+        are the null hypothesis itself, so their sampling error does not enter (without
+        ``source_y`` the plain two-sample variance is used, which is larger).
+
+    Returns
+    -------
+    ShiftTestResult
+        ``prior`` is None.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift import shift_score_test
+    >>> rng = np.random.default_rng(1)
+    >>> p1 = rng.uniform(0.6, 0.99, size=200)      # every row leans to class 1
+    >>> res = shift_score_test(np.column_stack([1 - p1, p1]), [0.5, 0.5])
+    >>> bool(res.pvalue < 1e-6)
+    True
+    """
+    p, w = _check_target(proba, sample_weight)
+    k = p.shape[1]
+    src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
+    mean, cov, n = _mean_cov(_score_rows(p, src), w)
+    source = None
+    if source_proba is not None:
+        ps, ws = _check_target(source_proba, source_sample_weight, name="source_proba")
+        if ps.shape[1] != k:
+            raise ValueError(f"`source_proba` has {ps.shape[1]} columns but `proba` has {k}.")
+        ys = None
+        if source_y is not None:
+            check_same_length(("source_proba", ps), ("source_y", source_y))
+            ys, _ = check_labels(source_y, name="source_y", classes=np.arange(k), min_classes=1)
+        source = _source_moments(_score_rows(ps, src), ws, ys, src)
+    stat, pvalue = _score_stat_moments((mean, cov, n), source, k)
+    return ShiftTestResult(statistic=stat, pvalue=pvalue, df=k - 1)
+
+
+def _source_moments(
+    u: np.ndarray,
+    w: np.ndarray,
+    y: np.ndarray | None,
+    prior: np.ndarray,
+    n_eff: float | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Mean of the labelled rows' scores and the covariance of that mean.
+
+    With class indices ``y`` the mean is stratified by class, ``sum_c prior_c mean_c``, with
+    covariance ``sum_c prior_c^2 cov_c / (n_c - 1)`` (``n_c`` Kish's count of class ``c``, or
+    ``n_eff`` times the class's weight share when ``n_eff`` overrides it); without, the plain
+    weighted mean with ``cov / (n - 1)``.
+    """
+    if y is None:
+        mean, cov, n = _mean_cov(u, w)
+        n = float(n_eff) if n_eff else n
+        return mean, cov / max(n - 1.0, 1.0)
+    total = float(w.sum())
+    mean = np.zeros(u.shape[1])
+    cov = np.zeros((u.shape[1], u.shape[1]))
+    for c in range(prior.shape[0]):
+        rows = y == c
+        wc = w[rows]
+        if wc.sum() <= 0:
+            continue
+        m_c, c_c, n_c = _mean_cov(u[rows], wc)
+        if n_eff:
+            n_c = float(n_eff) * float(wc.sum()) / total
+        mean = mean + prior[c] * m_c
+        cov = cov + prior[c] ** 2 * c_c / max(n_c - 1.0, 1.0)
+    return mean, cov
+
+
+def _score_stat_moments(target: tuple, source: tuple | None, k: int) -> tuple[float, float]:
+    """Score statistic from the target's (mean, covariance, effective rows) of the per-row
+    scores and the labelled rows' (mean, covariance of the mean)."""
+    mean, cov, n = target
+    total = cov / max(n - 1.0, 1.0)
+    if source is not None:
+        m_s, c_s = source
+        mean = mean - m_s
+        total = total + c_s
+    stat = float(mean @ np.linalg.pinv(total) @ mean) if np.any(total) else 0.0
+    stat = max(stat, 0.0)
+    return stat, float(chi2.sf(stat, k - 1))
+
+
 # -- confusion-matrix estimators ---------------------------------------------------------------
-def _solve_or_lstsq(a: np.ndarray, b: np.ndarray, what: str) -> np.ndarray:
-    cond = np.linalg.cond(a)
-    if not np.isfinite(cond) or cond > 1e12:
-        warnings.warn(
-            f"The {what} is singular or nearly so (condition number {cond:.3g}): some class is "
-            "never predicted or two classes are indistinguishable. A least-squares solution is "
-            "used; expect a wide interval.",
-            UserWarning,
-            stacklevel=3,
+def _identification(c: np.ndarray, n_source: float | None) -> tuple[bool, str]:
+    """Whether a joint confusion matrix ``c`` (rows predicted, columns true) identifies the priors.
+
+    With the class-conditional matrix ``M = c / column sums`` the priors solve ``M pi = q``.
+    They are identified when ``M`` is far from singular compared with its own sampling error:
+    for two classes ``|tpr - fpr| > 3 se`` with the binomial standard error
+    ``se = sqrt(tpr (1 - tpr) / n_1 + fpr (1 - fpr) / n_0)`` of the rates on the labelled rows
+    (our rule: a denominator known to better than a third of itself); for more classes the
+    smallest singular value of ``M`` against three times the root of the summed binomial
+    variances of its entries. Without ``n_source`` only an exactly singular matrix fails.
+    """
+    col = c.sum(axis=0)
+    m = c / np.where(col > 0, col, 1.0)
+    k = c.shape[0]
+    if k == 2:
+        tpr, fpr = m[1, 1], m[1, 0]
+        gap = abs(tpr - fpr)
+        if n_source is None or not np.isfinite(n_source):
+            return bool(gap > 1e-9), f"tpr {tpr:.3g}, fpr {fpr:.3g}"
+        n1, n0 = max(n_source * col[1], 1.0), max(n_source * col[0], 1.0)
+        se = float(np.sqrt(tpr * (1 - tpr) / n1 + fpr * (1 - fpr) / n0))
+        return bool(gap > 3.0 * max(se, 1e-12)), (
+            f"true-positive rate {tpr:.3g} and false-positive rate {fpr:.3g} differ by "
+            f"{gap:.3g}, against a standard error of {se:.3g} from the labelled rows"
         )
-        return np.linalg.lstsq(a, b, rcond=None)[0]
-    return np.linalg.solve(a, b)
+    sv = np.linalg.svd(m, compute_uv=False)
+    smallest = float(sv[-1])
+    if n_source is None or not np.isfinite(n_source):
+        return bool(smallest > 1e-9), f"smallest singular value {smallest:.3g}"
+    var = m * (1 - m) / np.maximum(n_source * col, 1.0)
+    se = float(np.sqrt(var.sum()))
+    return bool(smallest > 3.0 * max(se, 1e-12)), (
+        f"the class-conditional confusion matrix has smallest singular value {smallest:.3g}, "
+        f"against a sampling error of about {se:.3g}"
+    )
+
+
+def _not_identified(what: str, reason: str, stacklevel: int = 3) -> None:
+    warnings.warn(
+        f"{what} cannot identify the class priors: {reason}. The model's predictions barely "
+        "differ between the classes, so the estimate would be noise presented as a number. The "
+        "source prior is returned with an interval spanning [0, 1]; use method='em' with "
+        "calibrated posteriors, or a model that separates the classes better.",
+        PriorNotIdentifiedWarning,
+        stacklevel=stacklevel,
+    )
+
+
+def _solve_or_lstsq(a: np.ndarray, b: np.ndarray, what: str) -> np.ndarray:
+    return np.linalg.lstsq(a, b, rcond=None)[0]
 
 
 def bbse_prior(
@@ -351,6 +737,7 @@ def bbse_prior(
     *,
     soft: bool = False,
     sample_weight: Any = None,
+    n_source: float | None = None,
 ) -> PriorEstimate:
     r"""Black-box shift estimation (BBSE; Lipton, Wang & Smola 2018).
 
@@ -373,6 +760,12 @@ def bbse_prior(
         Class frequencies of the held-out rows (the column sums of ``confusion``).
     soft : bool, default=False
     sample_weight : array-like of shape (n,), default=None
+    n_source : float, default=None
+        Effective number of labelled rows behind ``confusion``. When given, a confusion matrix
+        that is singular within its sampling error (for two classes: true- and false-positive
+        rates within three standard errors) is reported as not identified: a
+        :class:`PriorNotIdentifiedWarning`, the source prior, ``identified=False``. Without
+        it only an exactly singular matrix is.
 
     Returns
     -------
@@ -392,10 +785,15 @@ def bbse_prior(
     c = _check_confusion(confusion, k)
     src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
     mu = _target_mean(p, w, soft)
+    name = "bbse_soft" if soft else "bbse"
+    ok, reason = _identification(c, n_source)
+    if not ok:
+        _not_identified(f"BBSE ({name})", reason)
+        return PriorEstimate(prior=src.copy(), method=name, n_rows=p.shape[0], identified=False)
     _warn_empty_columns(mu, "predicted mass" if soft else "predictions")
     weights = _solve_or_lstsq(c, mu, "confusion matrix")
     prior = project_to_simplex(weights * src)
-    return PriorEstimate(prior=prior, method="bbse_soft" if soft else "bbse", n_rows=p.shape[0])
+    return PriorEstimate(prior=prior, method=name, n_rows=p.shape[0])
 
 
 def _simplex_least_squares(
@@ -429,6 +827,7 @@ def acc_prior(
     *,
     soft: bool = False,
     sample_weight: Any = None,
+    n_source: float | None = None,
 ) -> PriorEstimate:
     r"""Adjusted classify-and-count (ACC) and its probabilistic form (PACC).
 
@@ -452,6 +851,9 @@ def acc_prior(
         Joint held-out confusion matrix (rows predicted, columns true).
     soft : bool, default=False
     sample_weight : array-like of shape (n,), default=None
+    n_source : float, default=None
+        Effective number of labelled rows behind ``confusion``; see :func:`bbse_prior` for the
+        identification check it enables.
 
     Returns
     -------
@@ -477,14 +879,12 @@ def acc_prior(
         )
     m = c / col
     q = _target_mean(p, w, soft)
+    name = "pacc" if soft else "acc"
+    ok, reason = _identification(c, n_source)
+    if not ok:
+        _not_identified(name.upper(), reason)
+        return PriorEstimate(prior=col.copy(), method=name, n_rows=p.shape[0], identified=False)
     _warn_empty_columns(q, "predicted mass" if soft else "predictions")
-    if np.linalg.cond(m) > 1e12:
-        warnings.warn(
-            "The class-conditional confusion matrix is singular or nearly so; the estimate is "
-            "not identified and rests on the simplex constraint. Expect a wide interval.",
-            UserWarning,
-            stacklevel=2,
-        )
     prior, n_iter, converged = _simplex_least_squares(m, q)
     return PriorEstimate(
         prior=prior, method="pacc" if soft else "acc", n_iter=n_iter, converged=converged,

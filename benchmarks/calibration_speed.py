@@ -1,0 +1,109 @@
+"""Speed of ``CalibrationWrapper(method="auto")`` beside scikit-learn's three methods together.
+
+Both sides calibrate the same frozen model on the same held-out rows: probwrap's ``auto`` (which
+cross-validates every candidate map and fits the chosen one) against the sum of the fit times of
+scikit-learn's ``CalibratedClassifierCV`` with ``method="sigmoid"``, ``"isotonic"`` and
+``"temperature"`` (the last one from scikit-learn 1.8 on). The frozen model is a precomputed
+score table, so the model's own prediction costs nothing and only the calibration is timed.
+Printed: rows, classes, both times, and the ratio (target: at most 1.5).
+
+Run: ``python benchmarks/calibration_speed.py`` (``--quick`` stops at 10^5 rows; the 10^6-row
+cases take a few minutes on two cores).
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+import warnings
+
+import numpy as np
+import sklearn
+from scipy.special import softmax
+from sklearn.base import BaseEstimator, ClassifierMixin
+from sklearn.calibration import CalibratedClassifierCV
+from sklearn.frozen import FrozenEstimator
+
+from probwrap import CalibrationWrapper
+
+SK_VERSION = tuple(int(p) for p in sklearn.__version__.split(".")[:2])
+
+
+class ScoreTable(ClassifierMixin, BaseEstimator):
+    """A 'model' whose input is the row number and whose output is a stored probability row,
+    so that both calibrators pay (almost) nothing for predictions."""
+
+    def __init__(self, proba=None):
+        self.proba = proba
+
+    def fit(self, X, y):
+        self.classes_ = np.unique(y)
+        self.n_features_in_ = 1
+        return self
+
+    def predict_proba(self, X):
+        return self.proba[np.asarray(X, dtype=np.intp).ravel()]
+
+    def predict(self, X):
+        return self.classes_[self.predict_proba(X).argmax(axis=1)]
+
+
+def make_case(n: int, k: int, seed: int = 0):
+    """Over-confident logits of a k-class model, and labels drawn from calibrated ones."""
+    rng = np.random.default_rng(seed)
+    z = rng.normal(size=(n, k)) * 1.5
+    y = np.array([rng.choice(k, p=p) for p in softmax(z[:2000], axis=1)] if n <= 2000 else [])
+    if n > 2000:  # draw labels in NumPy: inverse-CDF per row
+        cdf = np.cumsum(softmax(z, axis=1), axis=1)
+        y = (rng.random(n)[:, None] > cdf).sum(axis=1).clip(0, k - 1)
+    proba = softmax(2.0 * z, axis=1)  # the model is over-confident (temperature 1/2)
+    X = np.arange(n).reshape(-1, 1)
+    model = ScoreTable(proba).fit(X, y)
+    return model, X, y
+
+
+def timed(fn):
+    t = time.perf_counter()
+    fn()
+    return time.perf_counter() - t
+
+
+def run(n: int, k: int, repeats: int) -> tuple[float, float, str]:
+    model, X, y = make_case(n, k)
+    sk_methods = ["sigmoid", "isotonic"] + (["temperature"] if SK_VERSION >= (1, 8) else [])
+    chosen = ""
+
+    def ours():
+        nonlocal chosen
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", UserWarning)
+            m = CalibrationWrapper(FrozenEstimator(model), method="auto", random_state=0).fit(X, y)
+        chosen = m.method_
+
+    def theirs():
+        for method in sk_methods:
+            CalibratedClassifierCV(FrozenEstimator(model), method=method).fit(X, y)
+
+    t_ours = min(timed(ours) for _ in range(repeats))
+    t_sk = min(timed(theirs) for _ in range(repeats))
+    return t_ours, t_sk, chosen
+
+
+def main(quick: bool = False) -> None:
+    sizes = [1_000, 10_000, 100_000] + ([] if quick else [1_000_000])
+    print(f"scikit-learn {sklearn.__version__}; scikit-learn methods: sigmoid, isotonic"
+          + (", temperature" if SK_VERSION >= (1, 8) else ""))
+    print(f"{'rows':>9} {'classes':>7} {'auto s':>8} {'sklearn s':>9} {'ratio':>6}  chosen")
+    ratios = []
+    for k in (2, 5):
+        for n in sizes:
+            repeats = 3 if n <= 10_000 else 1
+            t_ours, t_sk, chosen = run(n, k, repeats)
+            ratios.append(t_ours / t_sk)
+            print(f"{n:>9} {k:>7} {t_ours:>8.3f} {t_sk:>9.3f} {t_ours / t_sk:>6.2f}  {chosen}",
+                  flush=True)
+    print(f"largest ratio: {max(ratios):.2f} (target <= 1.5)")
+
+
+if __name__ == "__main__":
+    main(quick="--quick" in sys.argv)

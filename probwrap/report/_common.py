@@ -1,0 +1,230 @@
+"""What the binary and the general report share: input checks, metric rows, notes, progress.
+
+Both :mod:`._content` (binary, one cutoff) and :mod:`._general` (multiclass / multi-action)
+import from here; neither imports the other's internals through this module.
+"""
+
+from __future__ import annotations
+
+import warnings
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..metrics import bootstrap_interval
+
+__all__ = [
+    "MetricRow",
+    "Recommendation",
+    "ReportNote",
+    "NoteLog",
+    "ProgressCallback",
+    "as_positive_proba",
+    "as_proba_2d",
+    "class_index",
+    "metric_row",
+]
+
+#: ``progress(step, done, total)``: called before each long step of a report (``done`` steps of
+#: ``total`` finished, ``step`` names the one starting) and once more with ``done == total``.
+ProgressCallback = Callable[[str, int, int], None]
+
+
+@dataclass
+class MetricRow:
+    """One calibration metric with its bootstrap interval.
+
+    ``value`` is the number shown; for the binned calibration error it is the bias-corrected
+    estimate and ``plain_value`` the plain (plug-in) binned error (see ``interval_method``).
+    """
+
+    key: str
+    label: str
+    value: float
+    low: float
+    high: float
+    ideal: str
+    interval_method: str = "percentile"
+    plain_value: float | None = None
+
+
+@dataclass(frozen=True)
+class ReportNote:
+    """A warning, or an expected failure, met while computing one number of a report.
+
+    ``key`` names the number (``"metric:slope"``, ``"cutoff"``, ``"prevalence"``, ...),
+    ``about`` says it in words, ``kind`` is the warning's category name (``"not computed"`` when
+    the number could not be computed), ``count`` how many times the same message came up (e.g.
+    once per bootstrap resample).
+    """
+
+    key: str
+    about: str
+    kind: str
+    message: str
+    count: int = 1
+
+
+@dataclass
+class Recommendation:
+    """The rule a report recommends now, and why.
+
+    ``expected_cost`` and ``acted_share`` are per row of the population the rule will act on:
+    the unlabelled rows, with posteriors moved to the estimated prevalence (expected cost), when
+    those were given (``basis == "unlabelled"``); otherwise the labelled rows (realised cost,
+    ``basis == "labelled"``). ``within_capacity`` is judged on that same share.
+    ``base_cutoff`` is the binary cutoff chosen on the labelled rows, before any move to the
+    estimated prevalence and any capacity fallback; ``action_shares`` the share of each action
+    (several actions).
+    """
+
+    key: str
+    name: str
+    cutoff: float | None
+    reasons: list[str]
+    expected_cost: float
+    acted_share: float
+    basis: str
+    within_capacity: bool | None = None
+    action_shares: np.ndarray | None = None
+    base_cutoff: float | None = None
+
+
+class NoteLog:
+    """Collects :class:`ReportNote` objects, one computation at a time.
+
+    :meth:`compute` runs one computation with the warnings it raises recorded (narrowly: only
+    inside that call), stores each distinct warning as a note about that number, and warns
+    once more with the number named, so that a caller of the report sees it too. Exceptions
+    listed in ``expected`` become a note (and a ``UserWarning``) and ``None`` is returned; any
+    other exception propagates.
+    """
+
+    def __init__(self) -> None:
+        self.notes: list[ReportNote] = []
+
+    def add(self, key: str, about: str, kind: str, message: str, count: int = 1) -> None:
+        self.notes.append(ReportNote(key, about, kind, message, count))
+
+    def compute(self, key: str, about: str, fn: Callable[..., Any], *args: Any,
+                expected: tuple[type[BaseException], ...] = (), **kwargs: Any) -> Any:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            try:
+                result = fn(*args, **kwargs)
+            except expected as exc:
+                failure = str(exc)
+                result = None
+            else:
+                failure = None
+        seen: dict[tuple[type, str], int] = {}
+        for w in caught:
+            k = (w.category, str(w.message))
+            seen[k] = seen.get(k, 0) + 1
+        for (category, message), count in seen.items():
+            self.add(key, about, category.__name__, message, count)
+            warnings.warn(f"report, {about}: {message}", category, stacklevel=3)
+        if failure is not None:
+            self.add(key, about, "not computed", failure)
+            warnings.warn(f"report, {about}: not computed: {failure}", UserWarning,
+                          stacklevel=3)
+        return result
+
+    def about(self, *prefixes: str) -> list[ReportNote]:
+        """The notes whose key starts with one of ``prefixes``."""
+        return [n for n in self.notes if n.key.startswith(prefixes)]
+
+
+def as_positive_proba(values: Any, name: str) -> np.ndarray:
+    """Positive-class probabilities of shape (n,) (a two-column array gives its second column)."""
+    try:
+        p = np.asarray(values, dtype=float)
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"`{name}` must be numeric probabilities ({exc}).") from None
+    if p.ndim == 2 and p.shape[1] == 2:
+        p = p[:, 1]
+    if p.ndim != 1:
+        raise ValueError(
+            f"`{name}` must be positive-class probabilities of shape (n,) (binary reports only); "
+            f"got shape {p.shape}."
+        )
+    if p.shape[0] == 0:
+        raise ValueError(f"`{name}` is empty.")
+    if not np.all(np.isfinite(p)) or np.any((p < 0) | (p > 1)):
+        bad = int(np.flatnonzero(~(np.isfinite(p) & (p >= 0) & (p <= 1)))[0])
+        raise ValueError(
+            f"`{name}` must hold probabilities in [0, 1]; row {bad} holds {float(p[bad])!r}."
+        )
+    return p
+
+
+def as_proba_2d(values: Any, name: str) -> np.ndarray:
+    """Class probabilities of shape (n, k), rows summing to one (a 1-d array means k = 2)."""
+    try:
+        p = np.asarray(values, dtype=float)
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"`{name}` must be numeric probabilities ({exc}).") from None
+    if p.ndim == 1:
+        p = np.column_stack([1.0 - p, p])
+    if p.ndim != 2 or p.shape[1] < 2:
+        raise ValueError(f"`{name}` must have shape (n, n_classes); got shape {p.shape}.")
+    if p.shape[0] == 0:
+        raise ValueError(f"`{name}` is empty.")
+    ok = np.isfinite(p) & (p >= 0) & (p <= 1)
+    if not ok.all():
+        row = int(np.flatnonzero(~ok.all(axis=1))[0])
+        raise ValueError(f"`{name}` must hold probabilities in [0, 1]; row {row} holds "
+                         f"{p[row].tolist()}.")
+    sums = p.sum(axis=1)
+    if np.any(np.abs(sums - 1.0) > 1e-6):
+        row = int(np.flatnonzero(np.abs(sums - 1.0) > 1e-6)[0])
+        raise ValueError(f"`{name}` rows must sum to one; row {row} sums to "
+                         f"{float(sums[row])!r}.")
+    return p
+
+
+def class_index(y: Any, classes: np.ndarray, name: str) -> np.ndarray:
+    """Position of each label of ``y`` among ``classes`` (a clear error for unknown labels)."""
+    arr = np.asarray(y)
+    if arr.ndim != 1:
+        raise ValueError(f"`{name}` must be 1-d; got shape {arr.shape}.")
+    unknown = ~np.isin(arr, classes)
+    if unknown.any():
+        row = int(np.flatnonzero(unknown)[0])
+        raise ValueError(f"`{name}` row {row} holds {arr[row]!r}, not among the classes "
+                         f"{classes.tolist()}.")
+    order = np.argsort(classes, kind="stable")
+    return order[np.searchsorted(classes[order], arr)].astype(np.intp)
+
+
+def metric_row(notes: NoteLog, key: str, label: str, fn: Any, y: np.ndarray, p: np.ndarray,
+               w: np.ndarray | None, ideal: str, n_resamples: int, level: float, seed: int,
+               **kw: Any) -> MetricRow:
+    """One metric with its bootstrap interval; warnings and expected failures become notes.
+
+    The binned calibration error (``key`` starting with ``"ece"``) is biased upwards: resampled
+    values lie mostly above the plain value, so a percentile interval can miss it. It is shown
+    bias-corrected, ``2 s - median(s*)``, with the basic bootstrap interval ``(2 s - q_high,
+    2 s - q_low)`` (Davison & Hinkley 1997, section 5.2.1), which contains that estimate by
+    construction; both are floored at 0 (the error cannot be negative), and the plain value is
+    kept in ``plain_value``.
+    """
+    binned = key.startswith("ece")
+    res = notes.compute(
+        f"metric:{key}", label, bootstrap_interval, fn, y, p, sample_weight=w,
+        n_resamples=n_resamples, confidence_level=level, random_state=seed,
+        method="basic" if binned else "percentile",
+        expected=(ValueError, np.linalg.LinAlgError), **kw,
+    )
+    if res is None:
+        nan = float("nan")
+        return MetricRow(key, label, nan, nan, nan, ideal)
+    value = float(res.statistic)
+    low, high = float(res.confidence_interval.low), float(res.confidence_interval.high)
+    if not binned:
+        return MetricRow(key, label, value, low, high, ideal)
+    corrected = 2.0 * value - float(np.median(res.bootstrap_distribution))
+    return MetricRow(key, label, max(corrected, 0.0), max(low, 0.0), max(high, 0.0), ideal,
+                     interval_method="basic, bias-corrected", plain_value=value)

@@ -1,0 +1,427 @@
+"""Prior shift that does no harm: the no-evidence gate, the boundary warning, identity at the
+source prior, weight-scale invariance, degenerate estimators, the certified EM stopping rule,
+and reference checks of the new statistics (score test, BCa, penalised likelihood)."""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+from sklearn.frozen import FrozenEstimator
+from sklearn.linear_model import LogisticRegression
+
+from probwrap import PriorShiftWrapper
+from probwrap.shift import (
+    BoundaryPriorWarning,
+    PriorEstimator,
+    PriorNotIdentifiedWarning,
+    adjust_to_prior,
+    bca_interval,
+    em_prior,
+    score_interval,
+    shift_score_test,
+)
+
+# Two Gaussian classes one unit-variance feature apart by DELTA: AUC = Phi(DELTA / sqrt 2)
+# (binormal model), 0.74 for DELTA = 0.91 - the weak model of the collapse report.
+DELTA = 0.91
+
+
+def gaussian(n, prevalence, rng, delta=DELTA):
+    y = (rng.uniform(size=n) < prevalence).astype(int)
+    return rng.normal(size=(n, 1)) + delta * y[:, None], y
+
+
+@pytest.fixture(scope="module")
+def weak_model():
+    X, y = gaussian(20_000, 0.05, np.random.default_rng(0))
+    return FrozenEstimator(LogisticRegression().fit(X, y))
+
+
+def binary_gaussian(n, prior, rng, sep=2.0):
+    y = (rng.uniform(size=n) < prior).astype(int)
+    x = rng.normal(sep * y - sep / 2)
+    p1 = 1 / (1 + np.exp(-sep * x))  # exact posterior under equal priors
+    return np.column_stack([1 - p1, p1]), y
+
+
+# -- do no harm --------------------------------------------------------------------------------
+def test_collapse_case_does_not_move_predictions_beyond_the_interval(weak_model):
+    # Weak model (AUC about 0.74), 5 % prevalence, no shift, 2,000 labelled and 2,000
+    # unlabelled rows: a draw on which the maximum-likelihood prior collapses to 0 (seed found
+    # by search). The report saw the wrapper re-weight to about 0 and double the log loss.
+    rng = np.random.default_rng(32)
+    X, y = gaussian(2000, 0.05, rng)
+    X_new, _ = gaussian(2000, 0.05, rng)
+    model = PriorShiftWrapper(weak_model, random_state=0).fit(X, y)
+    before = model.predict_proba(X_new)
+    with pytest.warns(BoundaryPriorWarning, match="separates the classes weakly"):
+        model.adapt(X_new)
+    assert model.prior_estimate_.ml_prior[1] == 0.0  # the collapse is there ...
+    lo, hi = model.target_prior_interval_[1]
+    assert lo <= 0.05 <= hi  # ... the interval is honest about it ...
+    # ... the evidence (statistic 3.4, p = 0.07) is weak, so the predictions move by a small
+    # share of the way, and stay between the predictions at the interval's ends
+    assert model.shift_pvalue_ >= 0.05 and 0 <= model.adaptation_weight_ < 0.5
+    lo_a, hi_a = (adjust_to_prior(model.prior_estimator_.calibrate(
+        model.estimator_.predict_proba(X_new)), model.source_prior_, [1 - v, v])[:, 1]
+        for v in (lo, hi))
+    after = model.predict_proba(X_new)[:, 1]
+    assert np.all(after >= lo_a - 1e-12) and np.all(after <= hi_a + 1e-12)
+    assert lo <= model.applied_prior_[1] <= hi
+    # The estimate applied in full also moves the predictions only within the interval.
+    eager = PriorShiftWrapper(weak_model, min_evidence=0, random_state=0).fit(X, y)
+    with pytest.warns(BoundaryPriorWarning):
+        eager.adapt(X_new)
+    moved = eager.predict_proba(X_new)[:, 1]
+    src = eager.source_prior_
+    cal = eager.prior_estimator_.calibrate(eager.estimator_.predict_proba(X_new))
+    at_lo = adjust_to_prior(cal, src, [1 - lo, lo])[:, 1]
+    at_hi = adjust_to_prior(cal, src, [1 - hi, hi])[:, 1]
+    assert lo <= eager.target_prior_[1] <= hi and eager.adaptation_weight_ == 1.0
+    assert np.all(moved >= at_lo - 1e-12) and np.all(moved <= at_hi + 1e-12)
+    np.testing.assert_allclose(before[:, 1], eager.prior_estimator_.calibrate(
+        eager.estimator_.predict_proba(X_new))[:, 1])
+
+
+def test_predictions_do_not_move_without_evidence():
+    # Statistic at or below min_evidence * (k - 1): exactly the calibrated posteriors.
+    rng = np.random.default_rng(31)
+    p_lab, y_lab = binary_gaussian(2000, 0.3, rng, sep=1.5)
+    X = np.log(p_lab[:, 1:] / p_lab[:, :1])  # one feature whose logistic fit is the posterior
+    model = PriorShiftWrapper(LogisticRegression(), cv=3, random_state=0).fit(X, y_lab)
+    for seed in range(6):
+        p_new, _ = binary_gaussian(1500, 0.3, np.random.default_rng(100 + seed), sep=1.5)
+        X_new = np.log(p_new[:, 1:] / p_new[:, :1])
+        before = model.predict_proba(X_new)
+        model.adapt(X_new)
+        if model.shift_statistic_ <= 2.0:
+            assert not model.shift_detected_ and model.adaptation_weight_ == 0.0
+            np.testing.assert_array_equal(model.predict_proba(X_new), before)
+        else:
+            expected = 1 - 2.0 / model.shift_statistic_
+            assert model.adaptation_weight_ == pytest.approx(expected, rel=1e-12)
+
+
+def test_no_evidence_keeps_predictions_and_evidence_moves_them(weak_model):
+    rng = np.random.default_rng(3)
+    X, y = gaussian(3000, 0.05, rng)
+    model = PriorShiftWrapper(weak_model, random_state=0).fit(X, y)
+    before = model.predict_proba(X[:200])
+    X_same, _ = gaussian(3000, 0.05, rng)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", BoundaryPriorWarning)
+        model.adapt(X_same)
+    if not model.shift_detected_:  # the usual outcome without shift
+        np.testing.assert_array_equal(model.predict_proba(X[:200]), before)
+    X_more, _ = gaussian(5000, 0.25, rng)
+    model.adapt(X_more)
+    assert model.shift_detected_ and model.shift_pvalue_ < 1e-6
+    w = model.adaptation_weight_
+    assert w > 0.9
+    np.testing.assert_allclose(
+        model.applied_prior_, model.source_prior_ + w * (model.target_prior_ - model.source_prior_)
+    )
+    assert not np.allclose(model.predict_proba(X[:200]), before)
+
+
+def test_map_estimate_lies_between_source_and_maximum_likelihood():
+    rng = np.random.default_rng(4)
+    p_src, y_src = binary_gaussian(1000, 0.5, rng, sep=1.0)
+    p_new, _ = binary_gaussian(500, 0.3, rng, sep=1.0)
+    res = PriorEstimator(n_resamples=0).fit(p_src, y_src).estimate(p_new)
+    ml, src = res.ml_prior[1], 0.5
+    assert min(ml, src) < res.prior[1] < max(ml, src)
+    plain = PriorEstimator(n_resamples=0, prior_strength=0.0).fit(p_src, y_src).estimate(p_new)
+    assert plain.prior[1] == pytest.approx(ml, abs=1e-9)
+
+
+# -- identity at the source prior and one calibration rule ------------------------------------
+def test_target_prior_equal_to_source_prior_is_exactly_the_untargeted_output():
+    rng = np.random.default_rng(5)
+    X, y = gaussian(1500, 0.3, rng, delta=1.5)
+    base = PriorShiftWrapper(LogisticRegression(), n_resamples=0, random_state=0).fit(X, y)
+    same = PriorShiftWrapper(
+        LogisticRegression(), target_prior=base.source_prior_, n_resamples=0, random_state=0
+    ).fit(X, y)
+    dict_prior = dict(zip(base.classes_.tolist(), base.source_prior_.tolist(), strict=True))
+    same_dict = PriorShiftWrapper(
+        LogisticRegression(), target_prior=dict_prior, n_resamples=0, random_state=0
+    ).fit(X, y)
+    X_new, _ = gaussian(300, 0.6, rng, delta=1.5)
+    np.testing.assert_array_equal(same.predict_proba(X_new), base.predict_proba(X_new))
+    np.testing.assert_array_equal(same_dict.predict_proba(X_new), base.predict_proba(X_new))
+    # adapt never switches the calibration: at any applied prior the output is the calibrated
+    # posteriors re-weighted (consistency test against adjust_to_prior)
+    base.adapt(X_new)
+    cal = base.prior_estimator_.calibrate(base.estimator_.predict_proba(X_new))
+    np.testing.assert_allclose(
+        base.predict_proba(X_new), adjust_to_prior(cal, base.source_prior_, base.applied_prior_),
+        atol=1e-15,
+    )
+
+
+# -- weights -----------------------------------------------------------------------------------
+def test_weight_scale_changes_nothing():
+    rng = np.random.default_rng(6)
+    p_src, y_src = binary_gaussian(800, 0.3, rng, sep=1.2)
+    p_new, _ = binary_gaussian(600, 0.45, rng, sep=1.2)
+    ws = rng.uniform(0.2, 3.0, size=800)
+    wt = rng.uniform(0.2, 3.0, size=600)
+    out = []
+    for c in (1.0, 1e-3, "sum1"):
+        cs = 1 / ws.sum() if c == "sum1" else c
+        ct = 1 / wt.sum() if c == "sum1" else c
+        for interval in ("score", "bca"):
+            est = PriorEstimator(n_resamples=60, random_state=0, interval=interval)
+            res = est.fit(p_src, y_src, ws * cs).estimate(p_new, wt * ct)
+            out.append((interval, res))
+    for interval in ("score", "bca"):
+        ref = next(r for i, r in out if i == interval)
+        for i, r in out:
+            if i != interval:
+                continue
+            np.testing.assert_allclose(r.prior, ref.prior, rtol=1e-9, atol=1e-12)
+            np.testing.assert_allclose(r.interval, ref.interval, rtol=1e-7, atol=1e-10)
+            assert r.shift_pvalue == pytest.approx(ref.shift_pvalue, rel=1e-9)
+
+
+def test_weight_scale_changes_nothing_in_the_wrapper(weak_model):
+    rng = np.random.default_rng(7)
+    X, y = gaussian(1500, 0.1, rng)
+    X_new, _ = gaussian(1000, 0.2, rng)
+    w = rng.uniform(0.5, 2.0, size=1000)
+    fits = [PriorShiftWrapper(weak_model, random_state=0).fit(X, y).adapt(X_new, sample_weight=w * c)
+            for c in (1.0, 1e-3, 1 / w.sum())]
+    for m in fits[1:]:
+        np.testing.assert_allclose(m.target_prior_, fits[0].target_prior_, rtol=1e-9)
+        np.testing.assert_allclose(m.target_prior_interval_, fits[0].target_prior_interval_,
+                                   rtol=1e-7)
+        assert m.shift_pvalue_ == pytest.approx(fits[0].shift_pvalue_, rel=1e-9)
+
+
+def test_dropped_resamples_are_counted_and_reported():
+    rng = np.random.default_rng(8)
+    p_src, y_src = binary_gaussian(300, 0.5, rng)
+    y_src[:] = 0
+    y_src[:2] = 1  # two labelled rows of class 1: Poisson resamples lose both in ~14 %
+    p_new, _ = binary_gaussian(300, 0.5, rng)
+    est = PriorEstimator(n_resamples=100, random_state=0, interval="bca").fit(p_src, y_src)
+    with pytest.warns(UserWarning, match="bootstrap resamples were dropped"):
+        res = est.estimate(p_new)
+    # P(both Poisson(1) draws are 0) = exp(-2) = 0.135: expect about 13.5 of 100
+    assert 4 <= res.n_dropped <= 25
+
+
+# -- degenerate estimators ---------------------------------------------------------------------
+@pytest.mark.parametrize("method", ["acc", "pacc", "bbse", "bbse_soft"])
+def test_degenerate_confusion_matrix_warns_and_does_not_pretend(method, weak_model):
+    # Weak model at 5 %: the argmax is always class 0, so hard tpr = fpr = 0 (ACC / BBSE have
+    # nothing to invert); the report saw ACC return exactly 0.500 with [0.48, 0.52].
+    rng = np.random.default_rng(9)
+    X, y = gaussian(2000, 0.05, rng)
+    X_new, _ = gaussian(2000, 0.05, rng)
+    # (the soft rates differ, 0.11 against 0.04, but by only about two standard errors of
+    # the 100 labelled positives: not identified either)
+    model = PriorShiftWrapper(weak_model, method=method, random_state=0).fit(X, y)
+    before = model.predict_proba(X_new)
+    with pytest.warns(PriorNotIdentifiedWarning, match="cannot identify"):
+        model.adapt(X_new)
+    np.testing.assert_allclose(model.target_prior_, model.source_prior_, atol=1e-12)
+    np.testing.assert_array_equal(model.target_prior_interval_, [[0, 1], [0, 1]])
+    assert not model.shift_detected_
+    np.testing.assert_array_equal(model.predict_proba(X_new), before)
+
+
+def test_nearly_equal_rates_are_not_identified():
+    # tpr 0.52 vs fpr 0.50 on 200 + 200 labelled rows: the gap 0.02 is under one standard
+    # error (about 0.05), so ACC must not return (q - fpr) / (tpr - fpr) as a finding.
+    confusion = np.array([[0.5 * 0.50, 0.5 * 0.48], [0.5 * 0.50, 0.5 * 0.52]])
+    proba = np.array([[0.4, 0.6]] * 51 + [[0.6, 0.4]] * 49)
+    from probwrap.shift import acc_prior
+
+    with pytest.warns(PriorNotIdentifiedWarning, match="standard error"):
+        res = acc_prior(proba, confusion, n_source=400)
+    assert not res.identified and res.prior == pytest.approx([0.5, 0.5])
+    assert acc_prior(proba, confusion).identified  # without n_source: not exactly singular
+
+
+# -- EM / Newton stopping ----------------------------------------------------------------------
+def _penalised_negloglik(pi, p, w, src, strength):
+    mix = (p / src) @ pi
+    return -(w @ np.log(mix) + np.sum(strength * src * np.log(pi)))
+
+
+def test_binary_estimate_is_within_its_certified_distance_of_scipy_optimum():
+    # Reference: the root of the penalised log-likelihood's derivative by SciPy's brentq
+    # (xtol 1e-14), cross-checked by minimize_scalar on the likelihood itself; the estimate
+    # must lie within the distance it reports.
+    from scipy.optimize import brentq, minimize_scalar
+
+    rng = np.random.default_rng(10)
+    p, _ = binary_gaussian(3000, 0.08, rng, sep=0.9)
+    src = np.array([0.5, 0.5])
+    d, a = p[:, 1] / src[1] - p[:, 0] / src[0], p[:, 0] / src[0]
+    for strength in (0.0, 20.0):
+        res = em_prior(p, src, tol=1e-9, prior_strength=strength)
+
+        def slope(t, c=strength):
+            return np.sum(d / (a + t * d)) + c * src[1] / t - c * src[0] / (1 - t)
+
+        root = brentq(slope, 1e-9, 1 - 1e-9, xtol=1e-14)
+        assert res.converged and res.distance <= 1e-9
+        assert abs(res.prior[1] - root) <= res.distance + 1e-12
+        ref = minimize_scalar(
+            lambda t, c=strength: _penalised_negloglik(np.array([1 - t, t]), p, np.ones(3000),
+                                                       src, c),
+            bounds=(1e-12, 1 - 1e-12), method="bounded", options={"xatol": 1e-12},
+        )
+        assert abs(res.prior[1] - ref.x) < 1e-7  # minimize_scalar is only ~sqrt(eps) sharp
+
+
+def test_multiclass_em_fixed_point_matches_scipy_and_the_bound_holds():
+    # Reference: scipy.optimize.minimize (SLSQP on the simplex) of the penalised
+    # log-likelihood. A small class makes plain EM crawl: the old rule (step < tol) stopped
+    # about 1000 x tol short of the fixed point; the distance bound does not.
+    from scipy.optimize import minimize
+
+    rng = np.random.default_rng(11)
+    k, n = 3, 4000
+    y = rng.choice(k, size=n, p=[0.6, 0.39, 0.01])
+    centres = np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 0.8]])
+    x = centres[y] + rng.normal(size=(n, 2))
+    logits = x @ centres.T - 0.5 * np.sum(centres**2, axis=1)
+    p = np.exp(logits) / np.exp(logits).sum(axis=1, keepdims=True)  # equal-prior posteriors
+    src = np.full(k, 1 / k)
+    for strength in (0.0, 10.0):
+        res = em_prior(p, src, tol=1e-8, max_iter=100_000, prior_strength=strength)
+        ref = minimize(
+            lambda v, c=strength: _penalised_negloglik(np.abs(v) / np.abs(v).sum(), p,
+                                                       np.ones(n), src, c),
+            res.prior, method="SLSQP", bounds=[(1e-12, 1)] * k,
+            constraints=[{"type": "eq", "fun": lambda v: v.sum() - 1}],
+            options={"ftol": 1e-15, "maxiter": 500},
+        )
+        pi_ref = ref.x / ref.x.sum()
+        assert res.converged
+        assert np.max(np.abs(res.prior - pi_ref)) <= max(res.distance, 1e-8) + 1e-6
+
+
+def test_iteration_cap_reports_the_distance():
+    rng = np.random.default_rng(12)
+    p, _ = binary_gaussian(500, 0.2, rng, sep=0.5)
+    p3 = np.column_stack([p * 0.5, np.full(500, 0.5)])
+    with pytest.warns(Warning, match="may be up to"):
+        res = em_prior(p3, [0.3, 0.3, 0.4], max_iter=2)
+    assert not res.converged and res.distance > 0
+
+
+# -- reference checks of the new statistics ----------------------------------------------------
+def test_two_class_score_test_is_statsmodels_welch_z_squared():
+    # Reference: statsmodels CompareMeans(...).ztest_ind(usevar="unequal") on the per-row
+    # scores u = p1 / pi1 - p0 / pi0 of both samples (weights rescaled to Kish's count, which
+    # DescrStatsW reads as frequency weights).
+    ws_mod = pytest.importorskip("statsmodels.stats.weightstats")
+    rng = np.random.default_rng(13)
+    p_s, _ = binary_gaussian(700, 0.4, rng, sep=1.0)
+    p_t, _ = binary_gaussian(500, 0.5, rng, sep=1.0)
+    src = np.array([0.55, 0.45])
+    w_s, w_t = rng.uniform(0.3, 2.0, 700), rng.uniform(0.3, 2.0, 500)
+    for weighted in (False, True):
+        a = shift_score_test(p_t, src, sample_weight=w_t if weighted else None,
+                             source_proba=p_s, source_sample_weight=w_s if weighted else None)
+        u_t = p_t[:, 1] / src[1] - p_t[:, 0] / src[0]
+        u_s = p_s[:, 1] / src[1] - p_s[:, 0] / src[0]
+        if weighted:
+            kt = w_t * w_t.sum() / np.dot(w_t, w_t)
+            ks = w_s * w_s.sum() / np.dot(w_s, w_s)
+        else:
+            kt, ks = np.ones(500), np.ones(700)
+        cm = ws_mod.CompareMeans(ws_mod.DescrStatsW(u_t, weights=kt),
+                                 ws_mod.DescrStatsW(u_s, weights=ks))
+        z, pval = cm.ztest_ind(usevar="unequal")
+        assert a.statistic == pytest.approx(z**2, rel=1e-10)
+        assert a.pvalue == pytest.approx(pval, rel=1e-8)
+
+
+def test_score_test_rejects_at_about_its_nominal_rate_without_shift():
+    # Under no shift the two-sample score test's p-value is uniform: about 5 % below 0.05.
+    rng = np.random.default_rng(14)
+    rejections = 0
+    for _ in range(300):
+        p_s, _ = binary_gaussian(400, 0.5, rng, sep=1.0)
+        p_t, _ = binary_gaussian(400, 0.5, rng, sep=1.0)
+        res = shift_score_test(p_t, [0.5, 0.5], source_proba=p_s)
+        rejections += res.pvalue < 0.05
+    # binomial(300, 0.05): mean 15, sd 3.8
+    assert 4 <= rejections <= 27
+
+
+def test_score_interval_at_source_prior_inverts_the_score_test():
+    # Consistency test: the interval excludes the source prior exactly when the test rejects.
+    rng = np.random.default_rng(15)
+    for prior in (0.5, 0.56, 0.7):
+        p_s, y_s = binary_gaussian(600, 0.5, rng, sep=1.0)
+        p_t, _ = binary_gaussian(600, prior, rng, sep=1.0)
+        src = np.bincount(y_s, minlength=2) / 600
+        test = shift_score_test(p_t, src, source_proba=p_s)
+        (lo, hi), ok = score_interval(p_t, p_s, y_s, src)
+        assert ok
+        assert (lo <= src[1] <= hi) == (test.pvalue >= 0.05)
+
+
+def test_bca_matches_scipy_on_the_same_resamples():
+    # Reference: scipy.stats.bootstrap(method="BCa"); fed its bootstrap distribution and the
+    # leave-one-out jackknife of the same statistic, bca_interval reproduces its interval.
+    from scipy.stats import bootstrap
+
+    rng = np.random.default_rng(16)
+    x = rng.exponential(size=35)
+    y = rng.gamma(2.0, size=28)
+    one = bootstrap((x,), np.mean, method="BCa", n_resamples=3000,
+                    random_state=np.random.default_rng(1))
+    jack = (x.sum() - x) / (x.size - 1)
+    mine = bca_interval(x.mean(), one.bootstrap_distribution, [jack])
+    np.testing.assert_allclose(mine, [one.confidence_interval.low, one.confidence_interval.high],
+                               rtol=1e-10)
+
+    def diff(a, b, axis=-1):
+        return np.mean(a, axis=axis) - np.mean(b, axis=axis)
+
+    two = bootstrap((x, y), diff, method="BCa", n_resamples=3000,
+                    random_state=np.random.default_rng(2))
+    jack_x = (x.sum() - x) / (x.size - 1) - y.mean()
+    jack_y = x.mean() - (y.sum() - y) / (y.size - 1)
+    mine = bca_interval(diff(x, y), two.bootstrap_distribution, [jack_x, jack_y])
+    np.testing.assert_allclose(mine, [two.confidence_interval.low, two.confidence_interval.high],
+                               rtol=1e-10)
+
+
+def test_default_interval_is_fast_enough_to_be_the_default():
+    # Not a timing test: the default interval needs no resampling, so adapt does one pass of
+    # arithmetic per grid point instead of n_resamples refits; checked by counting that the
+    # bootstrap is never entered.
+    rng = np.random.default_rng(17)
+    p_src, y_src = binary_gaussian(500, 0.5, rng)
+    p_new, _ = binary_gaussian(500, 0.3, rng)
+    est = PriorEstimator(random_state=0).fit(p_src, y_src)
+    est._bootstrap = None  # would raise TypeError if called
+    res = est.estimate(p_new)
+    assert res.interval[1, 0] < 0.3 < res.interval[1, 1]
+
+
+def test_estimator_test_is_the_stratified_public_score_test():
+    # Consistency test: PriorEstimator.estimate reports shift_score_test on the calibrated
+    # posteriors with the labelled rows' classes (stratified variance), which is never below
+    # the plain two-sample statistic's evidence (its variance is smaller).
+    rng = np.random.default_rng(18)
+    p_src, y_src = binary_gaussian(900, 0.3, rng, sep=1.2)
+    p_new, _ = binary_gaussian(700, 0.38, rng, sep=1.2)
+    est = PriorEstimator(n_resamples=0).fit(p_src, y_src)
+    res = est.estimate(p_new)
+    cal_s, cal_t = est.calibrate(p_src), est.calibrate(p_new)
+    strat = shift_score_test(cal_t, est.source_prior_, source_proba=cal_s, source_y=y_src)
+    plain = shift_score_test(cal_t, est.source_prior_, source_proba=cal_s)
+    assert res.shift_statistic == pytest.approx(strat.statistic, rel=1e-10)
+    assert strat.statistic > plain.statistic
