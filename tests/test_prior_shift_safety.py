@@ -182,9 +182,14 @@ def test_weight_scale_changes_nothing():
         for i, r in out:
             if i != interval:
                 continue
-            np.testing.assert_allclose(r.prior, ref.prior, rtol=1e-9, atol=1e-12)
+            # the bias-corrected calibration before the estimate is fitted by L-BFGS-B (gtol
+            # 1e-10): weights of another scale round differently and stop the optimiser at points
+            # ~1e-9 apart (observed 1.03e-9 with NumPy 1.26 / SciPy 1.12), hence atol 1e-8; without
+            # the effective-size rule the estimates differ by orders of magnitude more
+            np.testing.assert_allclose(r.prior, ref.prior, rtol=0, atol=1e-8)
             np.testing.assert_allclose(r.interval, ref.interval, rtol=1e-7, atol=1e-10)
-            assert r.shift_pvalue == pytest.approx(ref.shift_pvalue, rel=1e-9)
+            # same optimiser stopping point as above (observed relative gap 2e-9)
+            assert r.shift_pvalue == pytest.approx(ref.shift_pvalue, rel=1e-6)
 
 
 def test_weight_scale_changes_nothing_in_the_wrapper(weak_model):
