@@ -104,6 +104,20 @@ def _aligned_blocks(v: Any, name: str, X: Any, blocks: list, lengths: list | Non
     return [arr[cuts[i] : cuts[i + 1]] for i in range(len(blocks))]
 
 
+def _frozen_multiclass(owner: Any, y: Any) -> tuple[Any, np.ndarray]:
+    from sklearn.frozen import FrozenEstimator
+
+    estimator = owner.estimator
+    if not isinstance(estimator, FrozenEstimator):
+        raise ValueError(
+            "Dask input needs an already fitted estimator wrapped in "
+            "sklearn.frozen.FrozenEstimator; got " + type(estimator).__name__ + "."
+        )
+    if y is None:
+        raise ValueError(f"{type(owner).__name__} requires y to be passed, but the target y is None.")
+    return estimator, np.asarray(estimator.classes_)
+
+
 def _tree_merge(dask: Any, parts: list) -> Any:
     merge = dask.delayed(lambda a, b: a.merge(b), pure=True)
     while len(parts) > 1:

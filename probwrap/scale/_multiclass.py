@@ -25,7 +25,14 @@ from typing import Any
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 
-from ._dask import _aligned_blocks, _import_dask, _persist, _reduce, _row_blocks
+from ._dask import (
+    _aligned_blocks,
+    _frozen_multiclass,
+    _import_dask,
+    _persist,
+    _reduce,
+    _row_blocks,
+)
 
 __all__ = ["fit_multiclass_source", "estimate_multiclass_target"]
 
@@ -125,21 +132,11 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     Sets ``estimator_``, ``classes_`` (and feature attributes) on ``owner``; returns the
     estimator, whose ``n_resamples`` is 0 (no bootstrap for multiclass Dask input).
     """
-    from sklearn.frozen import FrozenEstimator
-
     from ..shift import PriorEstimator
     from ..shift._calibration import BiasCorrectedScaling, _newton
 
     dask, _ = _import_dask()
-    estimator = owner.estimator
-    if not isinstance(estimator, FrozenEstimator):
-        raise ValueError(
-            "Dask input needs an already fitted estimator wrapped in "
-            "sklearn.frozen.FrozenEstimator; got " + type(estimator).__name__ + "."
-        )
-    if y is None:
-        raise ValueError(f"{type(owner).__name__} requires y to be passed, but the target y is None.")
-    classes = np.asarray(estimator.classes_)
+    estimator, classes = _frozen_multiclass(owner, y)
     k = classes.shape[0]
     blocks, lengths = _row_blocks(X)
     ys = _aligned_blocks(y, "y", X, blocks, lengths)

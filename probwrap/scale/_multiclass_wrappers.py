@@ -17,20 +17,6 @@ __all__ = ["fit_multiclass_calibration", "first_block_row_costs", "heldout_cost_
 
 
 # -- CalibrationWrapper: temperature by reductions, binary maps one-vs-rest from tallies --------
-def _frozen_multiclass(owner: Any, y: Any) -> tuple[Any, np.ndarray]:
-    from sklearn.frozen import FrozenEstimator
-
-    estimator = owner.estimator
-    if not isinstance(estimator, FrozenEstimator):
-        raise ValueError(
-            "Dask input needs an already fitted estimator wrapped in "
-            "sklearn.frozen.FrozenEstimator; got " + type(estimator).__name__ + "."
-        )
-    if y is None:
-        raise ValueError(f"{type(owner).__name__} requires y to be passed, but the target y is None.")
-    return estimator, np.asarray(estimator.classes_)
-
-
 def _label_index(classes: np.ndarray, yb: Any) -> np.ndarray:
     yb = np.asarray(yb).ravel()
     pos = np.clip(np.searchsorted(classes, yb), 0, classes.shape[0] - 1)
@@ -105,6 +91,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     from ..calibration._temperature import _LOG_SPAN, TemperatureMap
     from ._dask import (
         _aligned_blocks,
+        _frozen_multiclass,
         _import_dask,
         _persist,
         _reduce,
