@@ -88,7 +88,10 @@ class IsotonicMap(CalibrationMap):
     Attributes
     ----------
     thresholds_ : ndarray of shape (m,)
-        Distinct training scores (of positive weight), increasing.
+        Breakpoints of the fitted step map, increasing: the smallest and largest training score
+        (of positive weight) of every fitted level. Training scores inside a level are not kept
+        (they change no prediction), so ``m`` is at most twice the number of levels and does not
+        grow with the number of training rows once the levels settle.
     values_ : ndarray of shape (m,)
         Fitted probability at each threshold, non-decreasing.
     floor_ : float
@@ -157,17 +160,35 @@ class IsotonicMap(CalibrationMap):
             # pooled target sums: each row's target is t- plus (t+ - t-) for a positive
             group_weight = np.ones(distinct.shape[0]) if weight is None else weight
             label_sum = t_neg * group_weight + (t_pos - t_neg) * label_sum
-        self.thresholds_ = distinct
         # The pooling pass itself is SciPy's compiled weighted PAV (scipy.optimize, since 1.12):
         # one O(m) pass over the m distinct scores, an order of magnitude faster than a Python
         # loop, which keeps the whole fit within a small multiple of the sort.
         # (weight is None: unit weights and no ties, label_sum is then the 0/1 labels in order)
         means = label_sum if weight is None else label_sum / weight
         fit = isotonic_regression(means, weights=weight, increasing=True)
-        self.values_ = np.clip(fit.x, 0.0, 1.0)
+        self.thresholds_, self.values_ = _block_ends(distinct, np.clip(fit.x, 0.0, 1.0))
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
         return _interpolate(scores, self.thresholds_, self.values_)
+
+
+def _block_ends(x: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Keep only the first and last point of every run of equal fitted values.
+
+    Inside a run the interpolated map is flat, so the interior points change no prediction:
+    linear interpolation between the kept points gives bit-identical outputs (the slope across
+    a run is exactly 0). The fitted map then has one or two points per isotonic level, a number
+    bounded by the number of distinct levels rather than by the number of training rows.
+    """
+    m = f.shape[0]
+    if m <= 2:
+        return x, f
+    keep = np.ones(m, dtype=bool)
+    same = f[1:] == f[:-1]  # same[i]: f[i + 1] == f[i]
+    keep[1:-1] = ~(same[:-1] & same[1:])  # interior point kept unless equal to both neighbours
+    if keep.all():
+        return x, f
+    return x[keep], f[keep]
 
 
 def _interpolate(x: np.ndarray, xp: np.ndarray, fp: np.ndarray) -> np.ndarray:

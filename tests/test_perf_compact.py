@@ -1,0 +1,51 @@
+"""Compact fitted representations (issue 16): outputs unchanged, size bounded."""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.optimize import isotonic_regression
+from scipy.special import expit
+from sklearn.isotonic import IsotonicRegression
+
+from probwrap.calibration import IsotonicMap
+from probwrap.calibration._isotonic import _interpolate, _pool_ties
+
+
+def _every_distinct_score_map(s, y, w):
+    """The previous representation: one breakpoint per distinct training score."""
+    distinct, weight, label_sum = _pool_ties(s, y, w)
+    fit = isotonic_regression(label_sum / weight, weights=weight, increasing=True)
+    return distinct, np.clip(fit.x, 0.0, 1.0)
+
+
+def test_isotonic_block_ends_predict_exactly_as_every_distinct_score():
+    rng = np.random.default_rng(5)
+    for trial in range(12):
+        n = int(rng.integers(3, 3000))
+        s = np.round(rng.normal(size=n) * 2, int(rng.integers(0, 4)))  # ties
+        y = (rng.random(n) < expit(s)).astype(float)
+        y[:2] = [0.0, 1.0]
+        w = rng.uniform(0.2, 3.0, size=n) if trial % 2 else np.ones(n)
+        m = IsotonicMap(smooth_targets=False).fit(s, y, sample_weight=w)
+        xp, fp = _every_distinct_score_map(s, y, w)
+        grid = np.concatenate([xp, np.linspace(s.min() - 1, s.max() + 1, 997), (xp[1:] + xp[:-1]) / 2])
+        # consistency test against the previous representation: bit-identical outputs
+        np.testing.assert_array_equal(m.predict(grid), _interpolate(grid, xp, fp))
+        # reference: scikit-learn's IsotonicRegression (its own pruned breakpoints); 1e-12 allows
+        # for the order of summation inside the two PAV implementations
+        ref = IsotonicRegression(out_of_bounds="clip").fit(s, y, sample_weight=w)
+        np.testing.assert_allclose(m.predict(grid), ref.predict(grid), atol=1e-12)
+        # only block ends are kept: no interior point equals both of its neighbours
+        v = m.values_
+        assert not np.any((v[1:-1] == v[:-2]) & (v[1:-1] == v[2:]))
+
+
+def test_isotonic_fitted_size_follows_levels_not_rows():
+    # 2e5 rows of a two-level truth: the fit has few levels, so few breakpoints, however many rows
+    rng = np.random.default_rng(2)
+    sizes = []
+    for n in (2_000, 200_000):
+        s = rng.normal(size=n)
+        y = (rng.random(n) < np.where(s > 0, 0.9, 0.1)).astype(float)
+        sizes.append(IsotonicMap().fit(s, y).thresholds_.shape[0])
+    assert sizes[1] < 0.01 * 200_000  # the previous representation kept all 200,000 scores
