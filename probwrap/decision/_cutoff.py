@@ -141,7 +141,7 @@ def _binary_targets(y: Any, n: int) -> np.ndarray:
             "`y` must hold binary targets coded 0 (negative) and 1 (positive); got values "
             f"{', '.join(seen)}."
         )
-    return arr.astype(np.intp)
+    return arr.astype(np.intp, copy=False)
 
 
 def _middle(lo: Any, hi: Any) -> Any:
@@ -266,6 +266,174 @@ class _RowCosts:
         return d_sorted, self.total_flag_all, w_sorted
 
 
+class _DecisionEnds:
+    """Lower (or upper) ends of the decision intervals, read from the distinct scores ``u``.
+
+    Decision ``j`` (``j = 0..m``) covers cutoffs in ``[lower[j], upper[j])`` with
+    ``lower = [lo_ext, u...]`` and ``upper = [u..., hi_ext]``; this indexes those arrays without
+    building them (two arrays as long as the scores).
+    """
+
+    def __init__(self, u: np.ndarray, lo_ext: float, hi_ext: float, *, upper: bool) -> None:
+        self.u, self.lo_ext, self.hi_ext, self.upper = u, lo_ext, hi_ext, upper
+
+    def __getitem__(self, idx: Any) -> np.ndarray:
+        k = np.asarray(idx) - (0 if self.upper else 1)
+        m = self.u.shape[0]
+        out = self.u[np.clip(k, 0, m - 1)]
+        return np.where(k < 0, self.lo_ext, np.where(k >= m, self.hi_ext, out))
+
+    def count_at_most(self, value: float) -> int:
+        """``np.searchsorted(upper, value, side="right")`` (upper ends only)."""
+        return int(np.searchsorted(self.u, value, side="right")) + int(self.hi_ext <= value)
+
+
+def _neighbour_middles(u: np.ndarray, lo_ext: float, hi_ext: float) -> np.ndarray:
+    """``_middle([lo_ext, u...], [u..., hi_ext])`` with one output array and no full temporaries.
+
+    The same floating-point operations as :func:`_middle` (``lo + 0.5 * (hi - lo)``), so the
+    values are identical; the rare gaps that overflow or round up are redone separately.
+    """
+    m = u.shape[0]
+    mid = np.empty(m + 1)
+    mid[0] = _middle(lo_ext, u[0])
+    mid[m] = _middle(u[-1], hi_ext)
+    if m > 1:
+        inner = mid[1:m]
+        with np.errstate(over="ignore", invalid="ignore"):
+            np.subtract(u[1:], u[:-1], out=inner)
+        overflow = np.flatnonzero(~np.isfinite(inner))
+        inner *= 0.5
+        inner += u[:-1]
+        if overflow.size:
+            inner[overflow] = _middle(u[overflow], u[overflow + 1])
+        # between adjacent doubles the middle rounds up to the upper end: the lower one is inside
+        up = np.flatnonzero(inner >= u[1:])
+        if up.size:
+            inner[up] = u[up]
+    return mid
+
+
+def _middles_in_place(buf: np.ndarray, m: int, lo_ext: float, hi_ext: float) -> np.ndarray:
+    """Overwrite ``buf[:m]`` (the distinct scores ``u``) with ``buf[:m + 1]``, the middles of
+    ``[lo_ext, u...]`` and ``[u..., hi_ext]``; the values equal :func:`_neighbour_middles`.
+
+    Works from the top down in chunks, so only a chunk-sized copy is ever made.
+    """
+    mid_top = _middle(buf[m - 1], hi_ext)
+    chunk = 1 << 16
+    b = m
+    while b > 1:
+        a = max(1, b - chunk)
+        u_lo = buf[a - 1 : b - 1].copy()
+        u_hi = buf[a:b].copy()
+        buf[a:b] = _neighbour_middles(np.concatenate([u_lo, u_hi[-1:]]), 0.0, 0.0)[1:-1]
+        b = a
+    buf[0] = _middle(lo_ext, buf[0])
+    buf[m] = mid_top
+    return buf[: m + 1]
+
+
+def _search_plain_rows(
+    s: np.ndarray, y: np.ndarray, matrix: np.ndarray, cap: float | None, bounds
+) -> CutoffSearchResult:
+    """:func:`_search_rows` for unweighted rows and one cost matrix, near the cost of one sort.
+
+    The scores of each class are sorted separately with plain sorts (no index), then the two
+    sorted runs are merged by a stable sort, which is linear for two runs: a stable ``argsort``
+    of the runs tells which merged entries are positives, and sorting the runs in place with the
+    same (stable) algorithm puts the scores in that same order. No per-row index into the
+    original rows is ever needed. Buffers are reused in place (the representative cutoffs
+    overwrite the sorted scores), so that the peak memory stays near the three arrays of the
+    returned curve.
+    """
+    n = s.shape[0]
+    positive = y == 1
+    n_pos = int(np.count_nonzero(positive))
+    n_neg = n - n_pos
+    runs = np.empty(n + 1)  # one spare slot: the cutoffs (m + 1 of them) are written here later
+    part = s[np.flatnonzero(~positive)]
+    part.sort()
+    runs[:n_neg] = part
+    part = s[np.flatnonzero(positive)]
+    part.sort()
+    runs[n_neg:n] = part
+    del positive, part
+    ss = runs[:n]
+    is_pos = np.argsort(ss, kind="stable") >= n_neg  # the index array is freed at once
+    ss.sort(kind="stable")  # the same stable merge: the scores in the order of is_pos
+    last = np.empty(n, dtype=bool)
+    np.not_equal(ss[1:], ss[:-1], out=last[:-1])
+    last[-1] = True
+    # per-row change of the total cost when the row moves from the positive to the negative
+    # action: c0 - c1 of its class; its total over the rows at or below a score is a cumsum
+    d_neg = float(matrix[0, 0] - matrix[0, 1])
+    d_pos = float(matrix[1, 0] - matrix[1, 1])
+    total_flag_all = float(np.dot(np.array([n_neg, n_pos], dtype=float), matrix[:, 1]))
+    if last.all():
+        del last
+        u_buf, m = runs, n
+        cost = np.empty(n + 1)
+        step = cost[1:]
+        ends = None
+    else:
+        ends = np.flatnonzero(last)
+        del last
+        m = ends.shape[0]
+        u_buf = np.empty(m + 1)
+        np.take(ss, ends, out=u_buf[:m])
+        cost = np.empty(m + 1)
+        step = ss  # the sorted scores are no longer needed: reuse their memory
+    del ss, runs
+    u = u_buf[:m]
+    # the same per-row values and the same cumulative sum as the general path (a two-entry
+    # look-up by the 0/1 flag is several times faster than filling by mask)
+    np.cumsum(np.array([d_neg, d_pos])[is_pos.view(np.uint8)], out=step)
+    del is_pos
+    if ends is not None:
+        np.take(step, ends, out=cost[1:])
+    del step
+    cost[0] = 0.0
+    cost += total_flag_all
+    cost /= float(n)
+    with np.errstate(over="ignore"):
+        gap = (u[-1] - u[0]) / (m - 1) if m > 1 else 1.0
+    lo_ext = _beyond(u[0], gap, -1.0)
+    hi_ext = _beyond(u[-1], gap, 1.0)
+    if bounds is not None:
+        if bounds[0] < u[0]:
+            lo_ext = bounds[0]
+        if bounds[1] > u[-1]:
+            hi_ext = bounds[1]
+    # flagged share of decision j: the rows above the j-th distinct score
+    if ends is None:
+        share = np.arange(n, -1, -1, dtype=np.float64)
+    else:
+        share = np.empty(m + 1)
+        share[0] = n
+        np.subtract(float(n), ends + 1.0, out=share[1:])
+        del ends
+    share[-1] = 0.0
+    share /= float(n)
+    admissible = np.ones(m + 1, dtype=bool) if cap is None else share <= cap * (1 + 1e-12)
+    lower = _DecisionEnds(u, lo_ext, hi_ext, upper=False)
+    upper = _DecisionEnds(u, lo_ext, hi_ext, upper=True)
+    index, value, lo, hi, flat = _pick_optimum(cost, lower, upper, admissible)
+    del lower, upper, u
+    mid = _middles_in_place(u_buf, m, lo_ext, hi_ext)
+    return CutoffSearchResult(
+        cutoff=value,
+        cost=float(cost[index]),
+        interval=(lo, hi),
+        flat=flat,
+        cutoffs=mid,
+        costs=cost,
+        flagged_share=share,
+        admissible=admissible,
+        capacity=cap,
+    )
+
+
 def _pick_optimum(
     cost: np.ndarray, lower: np.ndarray, upper: np.ndarray, admissible: np.ndarray
 ) -> tuple[int, float, float, float, bool]:
@@ -292,7 +460,10 @@ def _pick_optimum(
     r = int(np.argmax(widths))
     lo, hi = float(lower[starts[r]]), float(upper[stops[r]])
     value = float(_middle(lo, hi))
-    index = int(np.searchsorted(upper, value, side="right"))
+    if isinstance(upper, _DecisionEnds):
+        index = upper.count_at_most(value)
+    else:
+        index = int(np.searchsorted(upper, value, side="right"))
     index = min(max(index, int(starts[r])), int(stops[r]))
     return index, value, lo, hi, bool(stops[r] > starts[r])
 
@@ -370,14 +541,23 @@ def search_cutoff(
     (0.25, 0.25, (0.1, 0.4))
     """
     s, yi, w, matrix, unit = _prepare(scores, y, costs, sample_weight)
-    res = _search_rows(
-        s, _RowCosts(matrix, yi, w), check_capacity(capacity), _check_bounds(score_bounds)
-    )
+    if w is None and matrix.ndim == 2:
+        res = _search_plain_rows(
+            s, yi, matrix, check_capacity(capacity), _check_bounds(score_bounds)
+        )
+    else:
+        res = _search_rows(
+            s, _RowCosts(matrix, yi, w), check_capacity(capacity), _check_bounds(score_bounds)
+        )
     # mean costs never exceed the largest cost entry; scaling back can pass the largest double
     # only by rounding (a mean of costs at the top of the range)
+    if unit == 1.0:
+        return res
     big = np.finfo(float).max
+    costs_back = res.costs  # a fresh array of this call: scaled in place (no second copy)
     with np.errstate(over="ignore"):
-        costs_back = np.clip(res.costs * unit, -big, big)
+        costs_back *= unit
+    np.clip(costs_back, -big, big, out=costs_back)
     return replace(res, cost=float(np.clip(res.cost * unit, -big, big)), costs=costs_back)
 
 

@@ -49,3 +49,32 @@ def test_isotonic_fitted_size_follows_levels_not_rows():
         y = (rng.random(n) < np.where(s > 0, 0.9, 0.1)).astype(float)
         sizes.append(IsotonicMap().fit(s, y).thresholds_.shape[0])
     assert sizes[1] < 0.01 * 200_000  # the previous representation kept all 200,000 scores
+
+
+def test_unweighted_cutoff_search_equals_the_general_path():
+    # consistency test: the per-class sort path (unweighted rows, one cost matrix) against the
+    # general argsort path on the same rows, with ties, capacities, tiny and huge scores
+    from probwrap.decision import search_cutoff
+    from probwrap.decision._cutoff import _prepare, _RowCosts, _search_rows
+
+    rng = np.random.default_rng(8)
+    for trial in range(120):
+        n = int(rng.integers(1, 300))
+        s = np.round(rng.normal(size=n), int(rng.integers(0, 4)))
+        if trial % 7 == 0:
+            s = np.arange(n) * 1e-320  # denormal gaps
+        if trial % 11 == 0:  # gaps wider than the largest double
+            s = np.concatenate([np.linspace(-1.7e308, 0, n // 2), np.linspace(1e300, 1.7e308, n - n // 2)])
+        y = rng.integers(0, 2, n)
+        costs = rng.uniform(-2, 5, (2, 2)) if trial % 2 else rng.integers(-3, 6, (2, 2)).astype(float)
+        cap = None if trial % 3 else 0.3
+        bounds = (-10.0, 10.0) if trial % 5 == 0 else None
+        got = search_cutoff(s, y, costs, capacity=cap, score_bounds=bounds)
+        s2, yi, _, matrix, unit = _prepare(s, y, costs, None)
+        want = _search_rows(s2, _RowCosts(matrix, yi, None), cap, bounds)
+        assert (got.cutoff, got.interval, got.flat) == (want.cutoff, want.interval, want.flat)
+        np.testing.assert_array_equal(got.cutoffs, want.cutoffs)
+        np.testing.assert_array_equal(got.flagged_share, want.flagged_share)
+        np.testing.assert_array_equal(got.admissible, want.admissible)
+        # tied rows are summed in a different order by the two paths: last-bit differences
+        np.testing.assert_allclose(got.costs, want.costs * unit, rtol=1e-12, atol=1e-12)
