@@ -28,8 +28,18 @@ from .decision import (
     tune_class_offsets,
     zero_one_costs,
 )
+from .decision._cutoff import _thin_cost_curve
 
 __all__ = ["CostPolicyWrapper"]
+
+#: Up to this many held-out rows (of positive weight) a fitted wrapper keeps them: the curve at
+#: every distinct probability and the row bootstrap of ``cutoff_interval_``, as written.
+SMALL_HELDOUT_ROWS = 20_000
+#: Beyond it, ``cost_curve_`` keeps about this many decisions (the optimum itself is exact) ...
+CURVE_POINTS = 4097
+#: ... and the interval resamples a tally of the held-out probabilities with at most this many
+#: bins (log-odds bins of ``tally_resolution``, widened by powers of two while there are more).
+SUMMARY_BINS = 1 << 13
 
 _STRATEGIES = ("bayes", "tuned", "fixed")
 _BINARY_ONLY = "Only binary classification is supported"
@@ -98,8 +108,18 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     confidence_level : float, default=0.95
         Coverage of ``cutoff_interval_``.
     tally_resolution : float, default=1e-3
-        Dask input only: bin width on the log-odds scale of the score tallies that the
-        predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
+        Bin width on the log-odds scale of the score tallies that the predictions are reduced
+        to: for Dask input always (see :mod:`probwrap.scale`); for in-memory input only to
+        summarise more than 20,000 held-out rows for ``cutoff_interval_`` (see ``keep_heldout``).
+    keep_heldout : bool, default=False
+        Keep every held-out prediction in the fitted wrapper. By default a ``"tuned"`` binary
+        cutoff keeps them only up to 20,000 held-out rows; beyond that the fitted wrapper stays
+        small (well under 1 MB pickled, whatever the number of rows): ``cost_curve_`` keeps about
+        4,097 decisions (the optimum is exact and found on every row) and ``cutoff_interval_``
+        resamples a tally of the held-out probabilities (bins of ``tally_resolution`` on the
+        log-odds scale, at most 8,192 of them; a Poisson bootstrap of the bin counts, exact up
+        to the binning for unit weights) with the fold cutoffs found on every row at fit time.
+        ``True`` keeps the full curve and the row bootstrap at any size.
 
     Attributes
     ----------
@@ -117,7 +137,8 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     class_offsets_ : ndarray of shape (n_classes,) or None
         Log-probability offsets of the rule in the other cases (zeros for ``"bayes"``).
     cost_curve_ : CutoffSearchResult or None
-        ``"tuned"`` binary cutoff: held-out cost at every distinct cutoff and the optimum.
+        ``"tuned"`` binary cutoff: held-out cost at every distinct cutoff and the optimum (beyond
+        20,000 held-out rows at about 4,097 of them unless ``keep_heldout=True``).
     action_budget_ : ActionBudget or None
         Fitted capacity limit for the non-cutoff cases.
     heldout_cost_ : float or None
@@ -159,6 +180,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         n_resamples: int = 200,
         confidence_level: float = 0.95,
         tally_resolution: float = 1e-3,
+        keep_heldout: bool = False,
     ) -> None:
         self.estimator = estimator
         self.costs = costs
@@ -172,9 +194,12 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         self.n_resamples = n_resamples
         self.confidence_level = confidence_level
         self.tally_resolution = tally_resolution
+        self.keep_heldout = keep_heldout
 
     # -- parameter checks ------------------------------------------------------------------
     def _check_params(self) -> None:
+        if not isinstance(self.keep_heldout, (bool, np.bool_)):
+            raise ValueError(f"`keep_heldout` must be True or False; got {self.keep_heldout!r}.")
         if self.strategy not in _STRATEGIES:
             raise ValueError(f"`strategy` must be one of {_STRATEGIES}; got {self.strategy!r}.")
         if self.strategy == "fixed" and self.cutoff is None:
@@ -438,9 +463,15 @@ class CostPolicyWrapper(HeldOutClassifierBase):
                 p, ho.y_index, matrix, sample_weight=ho.sample_weight, capacity=share,
                 score_bounds=(0.0, 1.0),
             )
-            self.cost_curve_ = res
-            self._interval_inputs = (p, ho.y_index, matrix, ho.sample_weight, ho.fold, share)
             self.cutoff_ = res.cutoff
+            if self.keep_heldout or np.count_nonzero(ho.sample_weight) <= SMALL_HELDOUT_ROWS:
+                self.cost_curve_ = res
+                self._interval_inputs = (p, ho.y_index, matrix, ho.sample_weight, ho.fold, share)
+            else:
+                self.cost_curve_ = _thin_cost_curve(res, CURVE_POINTS)
+                self._interval_inputs = (
+                    "summary", _heldout_summary(self, p, ho, matrix, share), matrix, share
+                )
             return
         else:
             cutoff = plugin_cutoff(matrix)
@@ -532,6 +563,9 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         check_is_fitted(self, "actions_")
         if self._interval_inputs is None:
             return None
+        if self._interval_cache is None and _is_text(self._interval_inputs[0], "summary"):
+            _, summary, matrix, share = self._interval_inputs
+            self._interval_cache = _summary_interval(summary, matrix, share, self)
         if self._interval_cache is None and isinstance(self._interval_inputs[0], str):
             from .scale._bootstrap import tally_cutoff_interval
 
@@ -560,6 +594,77 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         return tags
 
 
+def _heldout_summary(policy: CostPolicyWrapper, p: np.ndarray, ho: Any, matrix, share) -> dict:
+    """What ``cutoff_interval_`` needs from many held-out rows, at a size independent of them.
+
+    The fold cutoffs are searched now on every row (one search in all); the rows themselves are
+    reduced to two tallies of their log-odds on the same bins: weighted label counts and row
+    counts (for the Poisson bootstrap, drawn when the interval is read).
+    """
+    from .scale import tally_scores
+    from .scale._tally import _check_resolution
+
+    w = ho.sample_weight
+    fold_cutoffs = []
+    for k in np.unique(ho.fold[ho.fold >= 0]):
+        rows = np.flatnonzero((ho.fold == k) & (w > 0))
+        if rows.size:
+            fold_cutoffs.append(search_cutoff(
+                p[rows], ho.y_index[rows], matrix, sample_weight=w[rows], capacity=share,
+                score_bounds=(0.0, 1.0),
+            ).cutoff)
+    present = w > 0
+    with np.errstate(divide="ignore"):
+        s = np.log(p[present]) - np.log1p(-p[present])
+    # probabilities of exactly 0 or 1 go to the outermost finite bins' neighbours
+    finite = s[np.isfinite(s)]
+    span = (finite.max() - finite.min()) if finite.size else 1.0
+    s = np.clip(s, (finite.min() if finite.size else 0.0) - 1.0, (finite.max() if finite.size else 0.0) + 1.0)
+    resolution = _check_resolution(policy.tally_resolution)
+    while (span + 2.0) / resolution > SUMMARY_BINS:
+        resolution *= 2.0
+    y = ho.y_index[present]
+    weighted = tally_scores(s, y, sample_weight=w[present], resolution=resolution)
+    rows = tally_scores(s, y, resolution=resolution)
+    return {"weighted": weighted, "rows": rows.counts, "folds": np.asarray(fold_cutoffs, float)}
+
+
+def _summary_interval(summary: dict, matrix, share, policy: CostPolicyWrapper) -> Any:
+    """Percentile bootstrap of the cutoff from the held-out tally (Poisson bin counts)."""
+    from sklearn.utils import check_random_state
+
+    from .decision import CutoffInterval
+
+    tally = summary["weighted"]
+    counts, row_counts = tally.counts, summary["rows"]
+    rep = 1.0 / (1.0 + np.exp(-tally.bin_scores))
+    bin_idx, label = np.nonzero(counts > 0)
+    p = rep[bin_idx]
+    mean_weight = counts[bin_idx, label] / row_counts[bin_idx, label]
+    rng = check_random_state(policy.random_state)
+    found = np.full(int(policy.n_resamples), np.nan)
+    for b in range(found.shape[0]):
+        # a cell of c rows drawn Poisson(1) times each holds Poisson(c) rows of the resample
+        wb = rng.poisson(row_counts[bin_idx, label]) * mean_weight
+        if wb.sum() > 0:
+            found[b] = search_cutoff(
+                p, label, matrix, sample_weight=wb, capacity=share, score_bounds=(0.0, 1.0)
+            ).cutoff
+    found = found[np.isfinite(found)]
+    alpha = (1.0 - float(policy.confidence_level)) / 2.0
+    low, high = (float(v) for v in np.quantile(found, [alpha, 1.0 - alpha]))
+    folds = summary["folds"]
+    return CutoffInterval(
+        low=low,
+        high=high,
+        confidence_level=float(policy.confidence_level),
+        bootstrap_cutoffs=found,
+        fold_cutoffs=folds,
+        fold_low=float(folds.min()) if folds.size else low,
+        fold_high=float(folds.max()) if folds.size else high,
+    )
+
+
 def _check_cutoff(cutoff: Any) -> float:
     if not _scalar_cutoff(cutoff) or not np.isfinite(float(cutoff)):
         raise ValueError(f"`cutoff` must be a finite probability in [0, 1]; got {cutoff!r}.")
@@ -574,3 +679,7 @@ def _num_rows(X: Any) -> int:
     if shape is not None and len(shape) > 0:
         return int(shape[0])
     return len(X)
+
+
+def _is_text(value: Any, text: str) -> bool:
+    return isinstance(value, str) and value == text

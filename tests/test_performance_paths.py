@@ -78,3 +78,34 @@ def test_unweighted_cutoff_search_equals_the_general_path():
         np.testing.assert_array_equal(got.admissible, want.admissible)
         # tied rows are summed in a different order by the two paths: last-bit differences
         np.testing.assert_allclose(got.costs, want.costs * unit, rtol=1e-12, atol=1e-12)
+
+
+def test_tuned_policy_stays_small_with_many_heldout_rows():
+    # 30,000 held-out rows (above the 20,000 kept): the fitted wrapper pickles small, the cutoff
+    # and the fold cutoffs are those found on every row, and the interval from the tally agrees
+    # with the row bootstrap kept by keep_heldout=True (consistency test)
+    import pickle
+
+    from sklearn.frozen import FrozenEstimator
+    from sklearn.linear_model import LogisticRegression
+
+    from probwrap import CostPolicyWrapper
+
+    rng = np.random.default_rng(4)
+    n = 30_000
+    X = rng.normal(size=(n, 2))
+    y = (rng.random(n) < expit(X[:, 0] - 1)).astype(int)
+    model = FrozenEstimator(LogisticRegression().fit(X[:2000], y[:2000]))
+    small = CostPolicyWrapper(model, costs={"fp": 1, "fn": 6}, strategy="tuned", random_state=0,
+                              n_resamples=100).fit(X, y)
+    full = CostPolicyWrapper(model, costs={"fp": 1, "fn": 6}, strategy="tuned", random_state=0,
+                             n_resamples=100, keep_heldout=True).fit(X, y)
+    assert len(pickle.dumps(small)) < 600_000 < len(pickle.dumps(full))
+    assert small.cutoff_ == full.cutoff_
+    assert small.cost_curve_.costs.shape[0] <= 4097 + 130
+    assert small.cost_curve_.costs.min() == full.cost_curve_.costs.min()
+    a, b = small.cutoff_interval_, full.cutoff_interval_
+    # two bootstraps of the same rows (Poisson on 1e-3-wide bins, and rows resampled): their
+    # percentile ends differ by resampling noise, well within a third of the interval's width
+    width = b.high - b.low
+    assert abs(a.low - b.low) < width / 3 and abs(a.high - b.high) < width / 3

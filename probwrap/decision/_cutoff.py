@@ -581,6 +581,38 @@ def _search_rows(s, row_costs: _RowCosts, cap, bounds) -> CutoffSearchResult:
     )
 
 
+def _thin_cost_curve(result: CutoffSearchResult, max_points: int) -> CutoffSearchResult:
+    """The same search result with the curve kept at no more than about ``max_points`` decisions.
+
+    The optimum (``cutoff``, ``cost``, ``interval``, ``flat``) is unchanged. The kept decisions
+    are evenly spaced along the curve (by decision index, i.e. by share of distinct scores), plus
+    both ends of every run of minimal cost and the decision holding ``cutoff``, so the minimum
+    still shows on a plot. Curves that are already short are returned as they are.
+    """
+    m1 = result.costs.shape[0]
+    if m1 <= max_points:
+        return result
+    c = np.where(result.admissible, result.costs, np.inf)
+    best = float(c.min())
+    scale = float(np.max(np.abs(result.costs[result.admissible]))) if result.admissible.any() else 0.0
+    opt = np.flatnonzero(c <= best + 1e-9 * scale)
+    breaks = np.flatnonzero(np.diff(opt) > 1)
+    run_ends = np.concatenate([opt[np.concatenate([[0], breaks + 1])],
+                               opt[np.concatenate([breaks, [opt.shape[0] - 1]])]])
+    holder = np.searchsorted(result.cutoffs, result.cutoff)
+    keep = np.unique(np.concatenate([
+        np.linspace(0, m1 - 1, max_points).round().astype(np.intp),
+        run_ends[:64], run_ends[-64:], np.clip([holder - 1, holder], 0, m1 - 1),
+    ]))
+    return replace(
+        result,
+        cutoffs=result.cutoffs[keep],
+        costs=result.costs[keep],
+        flagged_share=result.flagged_share[keep],
+        admissible=result.admissible[keep],
+    )
+
+
 def capacity_cutoff(
     scores: Any,
     capacity: float,
