@@ -12,9 +12,14 @@ from sklearn.base import clone
 from sklearn.model_selection import StratifiedKFold
 from sklearn.utils import check_random_state
 from sklearn.utils.metaestimators import available_if
-from sklearn.utils.validation import check_is_fitted
 
-from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, _multiclass_dask
+from ._heldout import (
+    HeldOutClassifierBase,
+    HeldOutPredictions,
+    _is_dask,
+    _multiclass_dask,
+    check_fitted,
+)
 from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
 from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
@@ -696,7 +701,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
 
     # -- prediction ----------------------------------------------------------------------------
     def _calibrated(self, X: Any) -> np.ndarray:
-        check_is_fitted(self, "calibrator_")
+        check_fitted(self, "calibrator_")
         values = self._inner_output(X, self.response_)
         return self._apply_map(self.calibrator_, self._to_scores(values))
 
@@ -727,7 +732,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
             shape (n, n_classes, 2), the one-vs-rest interval of each class before
             renormalisation.
         """
-        check_is_fitted(self, "calibrator_")
+        check_fitted(self, "calibrator_")
         scores = self._to_scores(self._inner_output(X, self.response_))
         if scores.ndim == 1:
             return self.calibrator_.predict_interval(scores)

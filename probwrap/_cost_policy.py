@@ -9,9 +9,9 @@ from typing import Any
 import numpy as np
 from sklearn.base import clone
 from sklearn.utils.multiclass import check_classification_targets
-from sklearn.utils.validation import check_is_fitted, column_or_1d
+from sklearn.utils.validation import column_or_1d
 
-from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, is_frozen
+from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, check_fitted, is_frozen
 from ._validation import check_labels, check_sample_weight
 from .decision import (
     apply_class_offsets,
@@ -531,7 +531,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
 
         For Dask input the result is a Dask array, computed block by block.
         """
-        check_is_fitted(self, "actions_")
+        check_fitted(self, "actions_")
         if _is_dask(X):
             return self._dask_predict(self.predict_proba, X, self.classes_.shape[0])
         return self._inner_output(X, "predict_proba")
@@ -539,7 +539,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     def predict(self, X: Any) -> np.ndarray:
         """Action for each row (labels from ``actions_``; a Dask array for Dask input)."""
         if _is_dask(X):
-            check_is_fitted(self, "actions_")
+            check_fitted(self, "actions_")
             return self._dask_predict(self.predict, X, None, self.actions_.dtype)
         proba = self.predict_proba(X)
         costs = None if (self._plain or self._cutoff_mode) else self._costs_for(X)
@@ -552,7 +552,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         function of ``X`` are evaluated on each block, so the function must work row by row).
         """
         if _is_dask(X):
-            check_is_fitted(self, "actions_")
+            check_fitted(self, "actions_")
             return self._dask_predict(self.expected_costs, X, self.actions_.shape[0])
         proba = self.predict_proba(X)
         return expected_costs(proba, self._costs_for(X))
@@ -560,7 +560,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     @property
     def cutoff_interval_(self) -> Any:
         """Bootstrap interval and fold spread of the tuned cutoff (None if there is none)."""
-        check_is_fitted(self, "actions_")
+        check_fitted(self, "actions_")
         if self._interval_inputs is None:
             return None
         if self._interval_cache is None and _is_text(self._interval_inputs[0], "summary"):

@@ -25,12 +25,13 @@ from typing import Any
 import numpy as np
 from sklearn import get_config
 from sklearn.base import BaseEstimator, ClassifierMixin, MetaEstimatorMixin, clone
+from sklearn.exceptions import NotFittedError
 from sklearn.frozen import FrozenEstimator
 from sklearn.model_selection import StratifiedKFold, check_cv, cross_val_predict
 from sklearn.utils import get_tags
 from sklearn.utils.metadata_routing import MetadataRouter, MethodMapping, process_routing
 from sklearn.utils.multiclass import check_classification_targets
-from sklearn.utils.validation import check_is_fitted, column_or_1d, has_fit_parameter
+from sklearn.utils.validation import column_or_1d, has_fit_parameter
 
 from ._predictions import HeldOutPredictions
 from ._predictions import resolve_response as _resolve_response
@@ -54,6 +55,22 @@ def _multiclass_dask(estimator: Any, X: Any, y: Any, sample_weight: Any) -> bool
         and isinstance(estimator, FrozenEstimator)
         and len(getattr(estimator, "classes_", ())) > 2
     )
+
+
+def check_fitted(estimator: Any, attribute: str) -> None:
+    """Raise scikit-learn's ``NotFittedError`` unless ``estimator`` has the fitted ``attribute``.
+
+    What ``check_is_fitted(estimator, attribute)`` decides for the wrappers, without its first
+    step: that one computes the estimator's tags, which for nested wrappers walks every layer down
+    to a deep copy inside ``FrozenEstimator`` on every ``predict`` call (most of the wrappers'
+    overhead over the wrapped model). The wrappers always require fitting, so the tags cannot
+    change the answer.
+    """
+    if not hasattr(estimator, attribute):
+        raise NotFittedError(
+            f"This {type(estimator).__name__} instance is not fitted yet. Call 'fit' with "
+            "appropriate arguments before using this estimator."
+        )
 
 
 def is_frozen(estimator: Any) -> bool:
@@ -259,11 +276,11 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         """Apply ``method`` to every block of Dask ``X``; returns a Dask array."""
         from .scale._dask import dask_predict
 
-        check_is_fitted(self, "estimator_")
+        check_fitted(self, "estimator_")
         return dask_predict(method, X, n_columns, dtype)
 
     def _inner_output(self, X: Any, response: str) -> np.ndarray:
-        check_is_fitted(self, "estimator_")
+        check_fitted(self, "estimator_")
         out = np.asarray(getattr(self.estimator_, response)(X), dtype=float)
         if not np.all(np.isfinite(out)):
             raise ValueError(

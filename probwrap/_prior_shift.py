@@ -8,9 +8,8 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
-from sklearn.utils.validation import check_is_fitted
 
-from ._heldout import HeldOutClassifierBase, _is_dask, _multiclass_dask
+from ._heldout import HeldOutClassifierBase, _is_dask, _multiclass_dask, check_fitted
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
 from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
 
@@ -343,7 +342,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             ``shift_statistic_`` set. Unless ``target_prior`` is given, ``predict_proba`` now
             adjusts to ``target_prior_``.
         """
-        check_is_fitted(self, "prior_estimator_")
+        check_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to adapt")
         est = self.prior_estimator_
         rs = self.random_state
@@ -461,7 +460,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         After a fit on Dask input the intervals come from the labelled tally's Poisson
         replicates (binary) or are the point estimate itself (multiclass: no bootstrap).
         """
-        check_is_fitted(self, "prior_estimator_")
+        check_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to monitor")
         if _is_dask(X) or _is_dask(sample_weight):
             # One batch per Dask block, estimated on the worker holding it.
@@ -520,7 +519,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         or with ``target_prior`` equal to ``source_prior_``) these are the calibrated
         probabilities themselves, unchanged.
         """
-        check_is_fitted(self, "prior_estimator_")
+        check_fitted(self, "prior_estimator_")
         if _is_dask(X):
             return self._dask_predict(self.predict_proba, X, self.classes_.shape[0])
         proba = self._inner_output(X, "predict_proba")
@@ -532,7 +531,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
     def predict(self, X: Any) -> np.ndarray:
         """Class with the largest adjusted probability (a Dask array for Dask input)."""
-        check_is_fitted(self, "prior_estimator_")
+        check_fitted(self, "prior_estimator_")
         if _is_dask(X):
             return self._dask_predict(self.predict, X, None, self.classes_.dtype)
         return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
