@@ -292,6 +292,8 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             or dask_input
         )
         ho: HeldOutPredictions | None = None
+        # Dask rows without weights: no replicate tallies at fit time (see _dask_replicates)
+        self._replicates_when_read = dask_input and sample_weight is None
         if needs_heldout:
             ho = self._fit_heldout(X, y, sample_weight, fit_params, response="predict_proba")
         else:
@@ -338,9 +340,13 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             # Tally rows (Dask input): their weights are row counts, not rows to resample; the
             # interval comes from the tally's Poisson-bootstrap replicates instead.
             tally = self.tally_
-            self._interval_inputs = (
-                ("tally", tally, matrix, budget_share) if tally.n_replicates else None
-            )
+            if tally.n_replicates:
+                self._interval_inputs = ("tally", tally, matrix, budget_share)
+            else:
+                # unweighted rows: the replicates are drawn from the tally when the interval is
+                # read (a bin of c rows holds Poisson(c) rows of a Poisson resample)
+                summary = {"weighted": tally, "rows": tally.counts, "folds": np.empty(0)}
+                self._interval_inputs = ("summary", summary, matrix, budget_share)
         if ho is not None:
             chosen = self._decide(proba, matrix if row_costs is None else row_costs)
             realised = (
@@ -583,9 +589,17 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         return self._interval_cache
 
     def _dask_replicates(self) -> int:
-        """Bootstrap replicates to tally on Dask input (for ``cutoff_interval_``)."""
+        """Bootstrap replicates to tally on Dask input (for ``cutoff_interval_``).
+
+        None for unweighted rows: a bin of ``c`` rows then holds Poisson(``c``) rows of a
+        Poisson resample, which is drawn from the tally itself when ``cutoff_interval_`` is read,
+        so the fit pays nothing for an interval nobody reads. Weighted rows need the per-row
+        draws, tallied at fit time.
+        """
         tuned = self.strategy == "tuned" and self.costs is not None and not callable(self.costs)
-        return int(self.n_resamples) if tuned else 0
+        if not tuned or getattr(self, "_replicates_when_read", False):
+            return 0
+        return int(self.n_resamples)
 
     def __sklearn_tags__(self):
         tags = super().__sklearn_tags__()
