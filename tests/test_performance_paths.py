@@ -109,3 +109,27 @@ def test_tuned_policy_stays_small_with_many_heldout_rows():
     # percentile ends differ by resampling noise, well within a third of the interval's width
     width = b.high - b.low
     assert abs(a.low - b.low) < width / 3 and abs(a.high - b.high) < width / 3
+
+
+def test_venn_abers_compact_pairs_equal_two_isotonic_fits_per_test_score():
+    # reference: for each test score, scikit-learn's IsotonicRegression refitted twice on the
+    # calibration rows plus the test point labelled 0 and 1 (Vovk, Petej & Fedorova 2015, the
+    # definition); the fitted map keeps only the thresholds where the pair changes
+    from probwrap.calibration import VennAbersMap
+
+    rng = np.random.default_rng(12)
+    n = 300
+    s = np.round(rng.normal(size=n) * 2, 1)  # ties
+    y = (rng.random(n) < expit(s)).astype(float)
+    m = VennAbersMap().fit(s, y)
+    assert m.thresholds_.shape[0] < np.unique(s).shape[0]
+    # (off the 0.1 grid of the scores: scikit-learn pools X values within 1e-15 as ties)
+    grid = np.concatenate([np.unique(s)[::3], np.linspace(-8, 8, 41) + 0.013])
+    got = m.predict_interval(grid)
+    for j, t in enumerate(grid):
+        pair = []
+        for label in (0.0, 1.0):
+            ref = IsotonicRegression(y_min=0, y_max=1).fit(np.append(s, t), np.append(y, label))
+            pair.append(ref.predict([t])[0])
+        # 1e-12: the order of summation inside the two PAV implementations
+        np.testing.assert_allclose(got[j], pair, atol=1e-12)

@@ -144,7 +144,9 @@ class VennAbersMap(CalibrationMap):
     Attributes
     ----------
     thresholds_ : ndarray of shape (m,)
-        Distinct calibration scores (of positive weight), increasing.
+        Distinct calibration scores (of positive weight), increasing, where the pair changes:
+        a score whose pair equals the pairs just below and just above it is not kept (it
+        changes no prediction), so ``m`` follows the number of distinct pairs.
     p0_at_, p1_at_ : ndarray of shape (m,)
         ``p0`` and ``p1`` for a test score equal to each threshold.
     p0_between_, p1_between_ : ndarray of shape (m + 1,)
@@ -195,11 +197,24 @@ class VennAbersMap(CalibrationMap):
         gaps = np.arange(m + 1)
         ties = np.arange(m)
         args = (1.0 / unit, prev, succ, up_prev, up_succ)
-        self.thresholds_ = distinct
-        self.p0_between_ = _insertion_values(cx, cy, gaps, gaps, 0.0, *args)
-        self.p1_between_ = _insertion_values(cx, cy, gaps, gaps, 1.0, *args)
-        self.p0_at_ = _insertion_values(cx, cy, ties, ties + 1, 0.0, *args)
-        self.p1_at_ = _insertion_values(cx, cy, ties, ties + 1, 1.0, *args)
+        p0_between = _insertion_values(cx, cy, gaps, gaps, 0.0, *args)
+        p1_between = _insertion_values(cx, cy, gaps, gaps, 1.0, *args)
+        p0_at = _insertion_values(cx, cy, ties, ties + 1, 0.0, *args)
+        p1_at = _insertion_values(cx, cy, ties, ties + 1, 1.0, *args)
+        # A threshold whose pair equals the pairs just below and just above it changes no
+        # prediction: drop it (the two gaps merge), so the fitted size follows the number of
+        # distinct pairs, not of calibration rows. Predictions are identical.
+        flat = (
+            (p0_between[:-1] == p0_at) & (p0_at == p0_between[1:])
+            & (p1_between[:-1] == p1_at) & (p1_at == p1_between[1:])
+        )
+        if flat.all():
+            flat[0] = False  # keep one threshold: the map needs at least one
+        keep = np.flatnonzero(~flat)
+        self.thresholds_ = distinct[keep]
+        self.p0_at_, self.p1_at_ = p0_at[keep], p1_at[keep]
+        self.p0_between_ = np.concatenate([p0_between[:1], p0_between[keep + 1]])
+        self.p1_between_ = np.concatenate([p1_between[:1], p1_between[keep + 1]])
 
     def predict_interval(self, scores: Any) -> np.ndarray:
         """The Venn-Abers pair ``[p0, p1]`` for each score.
