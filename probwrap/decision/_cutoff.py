@@ -321,7 +321,7 @@ def _middles_in_place(buf: np.ndarray, m: int, lo_ext: float, hi_ext: float) -> 
     Works from the top down in chunks, so only a chunk-sized copy is ever made.
     """
     mid_top = _middle(buf[m - 1], hi_ext)
-    chunk = 1 << 16
+    chunk = max(1 << 12, m // 32)  # the temporaries of a chunk stay a small share of the scores
     b = m
     while b > 1:
         a = max(1, b - chunk)
