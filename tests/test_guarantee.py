@@ -201,3 +201,51 @@ def test_violation_rate_at_most_delta_by_simulation():
         g = guaranteed_cutoff(s, y, {"fp": 1.0, "fn": 0.2}, requirement="recall", target=0.9)
         viol += norm.sf(g.cutoff - 1.5) < 0.9
     assert viol / 400 <= 0.1 + 3 * np.sqrt(0.1 * 0.9 / 400)
+
+
+def _frozen_model():
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.frozen import FrozenEstimator
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    X, y = load_breast_cancer(return_X_y=True)  # scikit-learn's bundled data
+    y = 1 - y  # malignant = positive
+    rng = np.random.default_rng(0)
+    idx = rng.permutation(len(y))
+    fit_rows, held_rows = idx[:250], idx[250:]
+    model = make_pipeline(StandardScaler(), LogisticRegression(C=0.05, max_iter=2000))
+    model.fit(X[fit_rows], y[fit_rows])
+    return FrozenEstimator(model), X[held_rows], y[held_rows]
+
+
+def test_wrapper_guarantee_equals_array_function():
+    from probwrap import CostPolicyWrapper
+
+    frozen, X, y = _frozen_model()
+    costs = {"fp": 1.0, "fn": 0.3}
+    spec = {"requirement": "recall", "target": 0.95, "confidence": 0.9}
+    policy = CostPolicyWrapper(frozen, costs=costs, strategy="tuned", guarantee=spec).fit(X, y)
+    g = guaranteed_cutoff(frozen.predict_proba(X)[:, 1], y, costs, score_bounds=(0, 1), **spec)
+    assert policy.cutoff_ == g.cutoff
+    assert policy.guarantee_.bound == pytest.approx(g.bound)
+    flagged = policy.predict(X) == 1
+    assert flagged[y == 1].mean() == pytest.approx(g.achieved)
+    assert g.achieved >= 0.95
+
+
+def test_wrapper_guarantee_refuses_what_it_cannot_certify_or_apply():
+    from probwrap import CostPolicyWrapper
+
+    frozen, X, y = _frozen_model()
+    with pytest.raises(GuaranteeUnreachableError):
+        CostPolicyWrapper(frozen, costs={"fp": 1, "fn": 1}, strategy="tuned",
+                          guarantee={"requirement": "recall", "target": 0.999,
+                                     "confidence": 0.99}).fit(X, y)
+    with pytest.raises(ValueError, match="strategy='tuned'"):
+        CostPolicyWrapper(frozen, costs={"fp": 1, "fn": 1},
+                          guarantee={"requirement": "recall", "target": 0.9}).fit(X, y)
+    with pytest.raises(ValueError, match="keys 'requirement' and 'target'"):
+        CostPolicyWrapper(frozen, costs={"fp": 1, "fn": 1}, strategy="tuned",
+                          guarantee={"recall": 0.9}).fit(X, y)
