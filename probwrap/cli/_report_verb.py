@@ -13,24 +13,19 @@ from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     MIN_RESAMPLES,
     DataError,
-    Stages,
     add_format_flag,
     add_positive_label_flag,
     add_resamples_flag,
-    check_out_suffix,
     check_ranking,
     check_row_count,
-    check_writable,
     clean,
-    numeric_column,
-    probability_column,
-    read_labels,
-    read_table,
     require,
     shown,
     whole_number,
-    write_text,
 )
+from ._files import check_out_suffix, check_writable, write_text
+from ._progress import Stages
+from ._tables import numeric_column, probability_column, read_labels, read_table
 
 __all__ = ["register"]
 

@@ -11,9 +11,11 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
+from ._binary_rules import RuleRow
 from ._common import Recommendation, ReportNote
-from ._content import MetricRow, ReportContent, RuleRow, collect_content
-from ._general import ActionRuleRow, MulticlassReportContent
+from ._content import MetricRow, ReportContent, collect_content
+from ._general import MulticlassReportContent
+from ._general_rules import ActionRuleRow
 from ._html import CAUTIONS, figure_to_svg, make_figures, render_html
 
 __all__ = [
