@@ -168,7 +168,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         if bad.any():
             row = int(np.flatnonzero(bad)[0])
             raise DataError(f"{path}: row {row + 2} (counting the header as row 1): the class "
-                            f"probabilities sum to {sums[row]!r}, not 1")
+                            f"probabilities sum to {shown(sums[row])}, not 1")
         return P
 
     with Stages("report", ["reading", "computing the report", "writing"]) as stages:
@@ -333,6 +333,7 @@ def _handler(args: argparse.Namespace) -> int:
         content = _build_and_write(
             args, stages, y_true=y, y_prob=p, costs=costs, capacity=args.capacity,
             unlabelled_prob=q, batch_size=args.batch_size,
+            class_names=[str(v) for v in labels],
         )
     summary = {"out": args.out, "n_rows": int(content.n_rows),
                "labels": {"negative": labels[0], "positive": labels[1]}}

@@ -93,6 +93,7 @@ class ReportContent:
     confidence_level: float = 0.95
     notes: list[ReportNote] = field(default_factory=list)
     recommendation: Recommendation | None = None
+    class_names: tuple[str, str] = ("negative", "positive")
 
 
 def _inner_chain(model: Any) -> list[Any]:
@@ -132,6 +133,52 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes) -> list[Metric
                                 {key: label for key, label, *_ in specs})
     return [metric_row(notes, key, label, fn, y, p, w, ideal, n_resamples, level, seed, **kw)
             for key, label, fn, kw, ideal in specs]
+
+
+def _is_zero_one(labels: Any) -> bool:
+    plain = [v.item() if hasattr(v, "item") else v for v in labels]
+    return all(isinstance(v, (bool, int, float)) and v in (0, 1) for v in plain)
+
+
+def _binary_truth(y_true: Any, class_names: Any) -> tuple[np.ndarray, Any]:
+    """0/1 labels and the two original labels ``[negative, positive]``.
+
+    Labels 0/1 (or booleans) have positive class 1. Any other pair must be named, in the order
+    ``(negative, positive)``, by ``class_names``: which class is positive is never guessed from
+    the sort order.
+    """
+    arr = np.asarray(y_true)
+    found = np.unique(arr) if arr.ndim == 1 else None
+    if found is None or found.shape[0] > 2 or _is_zero_one(found):
+        return binary_labels(y_true, name="y_true"), found
+    shown = [str(v.item() if hasattr(v, "item") else v) for v in found]
+    if class_names is not None and len(class_names) == 2 and set(shown) <= {
+            str(c) for c in class_names}:
+        order = [found[shown.index(str(c))] if str(c) in shown else None for c in class_names]
+        return (arr == order[1]).astype(float), [str(c) for c in class_names]
+    pair = " and ".join(repr(v) for v in shown)
+    if class_names is not None:
+        raise ValueError(f"`class_names` {[str(c) for c in class_names]} must name the two labels "
+                         f"of `y_true`, {pair}, in the order (negative, positive).")
+    example = tuple(reversed(shown)) if len(shown) == 2 else ("negative", "positive")
+    raise ValueError(
+        f"`y_true` holds the labels {pair}, not 0/1; say which is the positive class (the class "
+        f"`y_prob` is the probability of) with class_names=(negative, positive), e.g. "
+        f"class_names={example!r}."
+    )
+
+
+def _binary_class_names(class_names: Any, labels: Any) -> tuple[str, str]:
+    """Display names ``(negative, positive)``: ``class_names``, else the labels unless 0/1."""
+    if class_names is not None:
+        names = [str(c) for c in class_names]
+        if len(names) != 2:
+            raise ValueError(f"`class_names` must name the 2 classes (negative, positive); got "
+                             f"{len(names)}: {names}.")
+        return names[0], names[1]
+    if labels is not None and len(labels) == 2 and not _is_zero_one(labels):
+        return tuple(str(v.item() if hasattr(v, "item") else v) for v in labels)
+    return "negative", "positive"
 
 
 def collect_content(
@@ -187,19 +234,21 @@ def collect_content(
             raise ValueError("Give either `model` with `X`, `y`, or `y_true` with `y_prob`.")
         p = positive_proba(model, X, name="model")
         y01 = binary_labels(y, getattr(model, "classes_", None), name="y")
+        labels = getattr(model, "classes_", None)
         if unlabelled_prob is None and X_unlabelled is not None:
             unlabelled_prob = positive_proba(model, X_unlabelled, name="model")
     else:
         if y_true is None or y_prob is None:
             raise ValueError("Give `y_true` and `y_prob` (or a fitted `model` with `X`, `y`).")
         p = as_positive_proba(y_prob, "y_prob")
-        y01 = binary_labels(y_true, name="y_true")
+        y01, labels = _binary_truth(y_true, class_names)
     if y01.shape[0] != p.shape[0]:
         raise ValueError(
             f"`y_true` has {y01.shape[0]} rows but `y_prob` has {p.shape[0]}; they must match."
         )
     if np.unique(y01).shape[0] < 2:
         raise ValueError("The labels must contain both classes to assess calibration.")
+    class_pair = _binary_class_names(class_names, labels)
     w = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
     cap = check_capacity(capacity)
     if costs is not None:
@@ -221,6 +270,7 @@ def collect_content(
         metrics=_metric_rows(y01, p, w, n_bins, n_resamples, confidence_level, rng, notes),
         n_bins=n_bins,
         confidence_level=confidence_level,
+        class_names=class_pair,
     )
     if calib is not None:
         content.calibration_method = str(getattr(calib, "method_", None))

@@ -15,6 +15,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import power_of_two_unit
 from ..decision import check_cost_matrix, check_row_costs
 from ..metrics import (
     brier_score,
@@ -164,10 +165,14 @@ def collect_general_content(
     matrix = None
     per_row = None
     rule_fns: list = []
-    q_costs = None
+    rule_costs = None
     if row_costs is not None:
         per_row = check_row_costs(row_costs, n, n_classes=k, name="row_costs")
-        matrix = np.average(per_row, axis=0, weights=w)
+        # the mean matrix, with costs and weights divided by powers of two (exact) so that
+        # the sums stay finite for costs near the largest float
+        unit = power_of_two_unit(per_row)
+        matrix = unit * np.average(per_row / unit, axis=0,
+                                   weights=None if w is None else w / power_of_two_unit(w))
     elif costs is not None:
         matrix = check_cost_matrix(costs, n_classes=k)
     if matrix is not None:
@@ -195,8 +200,9 @@ def collect_general_content(
         if capacity is None and policy is not None:
             capacity = policy.capacity
         content.capacity = resolve_capacity(capacity, names)
-        rule_fns, q_costs = general_rules(content, proba, y_index, w, matrix, per_row, policy,
-                                   policy_costs, X, unlabelled_proba, X_unlabelled)
+        rule_fns, rule_costs = general_rules(content, proba, y_index, w, matrix, per_row,
+                                             policy, policy_costs, X, unlabelled_proba,
+                                             X_unlabelled)
     elif capacity is not None:
         raise ValueError("`capacity` needs costs (`costs` or `row_costs`).")
 
@@ -225,10 +231,10 @@ def collect_general_content(
         content.shift_pvalue = float(res.shift_pvalue)
     if (content.target_prior is not None and q is not None and matrix is not None
             and np.all(content.source_prior > 0) and np.all(content.target_prior > 0)):
-        general_target_columns(content, proba, y_index, w, matrix, per_row, q, rule_fns, q_costs,
-                        X_unlabelled, policy is not None)
+        general_target_columns(content, proba, y_index, w, rule_costs, q, rule_fns,
+                               X_unlabelled, policy is not None)
     if content.rules:
-        recommend_general(content, proba, q, q_costs, notes)
+        recommend_general(content, proba, y_index, w, rule_costs, q, notes)
     content.notes = notes.notes
     step("done", 4)
     return content
