@@ -128,8 +128,8 @@ def censoring_survival(
     --------
     >>> from probwrap.late_labels import censoring_survival
     >>> times, g = censoring_survival([1, 2, 2, 3, 4], [1, 0, 1, 0, 1])
-    >>> times.tolist(), [round(v, 4) for v in g]
-    ([2.0, 3.0], [0.75, 0.375])
+    >>> times.tolist(), g.round(4).tolist()
+    ([2.0, 3.0], [0.6667, 0.3333])
     """
     t, e = _check_time_event(time, event)
     w = np.ones(t.shape[0]) if sample_weight is None else check_sample_weight(
@@ -179,8 +179,8 @@ def labels_at_horizon(
     --------
     >>> from probwrap.late_labels import labels_at_horizon
     >>> hl = labels_at_horizon([5, 40, 12, 31, 3], [1, 0, 0, 0, 0], horizon=30)
-    >>> hl.y.tolist(), [round(v, 4) for v in hl.sample_weight], hl.is_open.tolist()
-    ([1, 0, 0, 0, 0], [1.0, 2.0, 0.0, 2.0, 0.0], [False, False, True, False, True])
+    >>> hl.y.tolist(), hl.sample_weight.round(4).tolist(), hl.is_open.tolist()
+    ([1, 0, 0, 0, 0], [1.25, 1.875, 0.0, 1.875, 0.0], [False, False, True, False, True])
     """
     t, e = _check_time_event(time, event)
     try:
