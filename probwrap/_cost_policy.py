@@ -666,8 +666,7 @@ def _heldout_summary(policy: CostPolicyWrapper, p: np.ndarray, ho: Any, matrix, 
     reduced to two tallies of their log-odds on the same bins: weighted label counts and row
     counts (for the Poisson bootstrap, drawn when the interval is read).
     """
-    from .scale import tally_scores
-    from .scale._tally import _check_resolution
+    from .scale._entry import check_resolution, tally_scores
 
     w = ho.sample_weight
     fold_cutoffs = []
@@ -685,7 +684,7 @@ def _heldout_summary(policy: CostPolicyWrapper, p: np.ndarray, ho: Any, matrix, 
     finite = s[np.isfinite(s)]
     span = (finite.max() - finite.min()) if finite.size else 1.0
     s = np.clip(s, (finite.min() if finite.size else 0.0) - 1.0, (finite.max() if finite.size else 0.0) + 1.0)
-    resolution = _check_resolution(policy.tally_resolution)
+    resolution = check_resolution(policy.tally_resolution)
     while (span + 2.0) / resolution > SUMMARY_BINS:
         resolution *= 2.0
     y = ho.y_index[present]

@@ -9,6 +9,7 @@ but never a wrapper, so the two layers never import each other (checked by
 from __future__ import annotations
 
 from ._bootstrap import tally_cutoff_interval, tally_prior_interval
+from ._build import tally_scores
 from ._dask import (
     dask_predict,
     heldout_from_dask,
@@ -22,9 +23,11 @@ from ._multiclass_wrappers import (
     fit_multiclass_calibration,
     heldout_cost_dask,
 )
+from ._tally import _check_resolution as check_resolution
 from ._tally import replicate_seed
 
 __all__ = [
+    "check_resolution",
     "dask_predict",
     "estimate_multiclass_target",
     "first_block_row_costs",
@@ -37,5 +40,6 @@ __all__ = [
     "replicate_seed",
     "tally_cutoff_interval",
     "tally_prior_interval",
+    "tally_scores",
     "unlabelled_proba_from_dask",
 ]
