@@ -11,6 +11,7 @@ import numpy as np
 from sklearn.utils.validation import check_is_fitted
 
 from ._heldout import HeldOutClassifierBase, _is_dask, _multiclass_dask
+from ._validation import plain
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
 from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
 
@@ -208,15 +209,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     # -- parameters ------------------------------------------------------------------------------
     def _check_params(self) -> None:
         if self.method not in PRIOR_METHODS:
-            raise ValueError(f"`method` must be one of {PRIOR_METHODS}; got {self.method!r}.")
+            raise ValueError(f"`method` must be one of {PRIOR_METHODS}; got {plain(self.method)!r}.")
         if self.calibration not in CALIBRATIONS:
             raise ValueError(
-                f"`calibration` must be one of {CALIBRATIONS}; got {self.calibration!r}."
+                f"`calibration` must be one of {CALIBRATIONS}; got {plain(self.calibration)!r}."
             )
         c = self.min_evidence
         if not (isinstance(c, numbers.Real) and not isinstance(c, bool) and np.isfinite(c)
                 and c >= 0):
-            raise ValueError(f"`min_evidence` must be a finite number >= 0; got {c!r}.")
+            raise ValueError(f"`min_evidence` must be a finite number >= 0; got {plain(c)!r}.")
 
     def _resolve_target_prior(self) -> np.ndarray | None:
         prior = self.target_prior

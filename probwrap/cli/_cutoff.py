@@ -15,6 +15,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
@@ -35,7 +36,7 @@ def _finite_number(text: str) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+        raise argparse.ArgumentTypeError(f"{plain(text)!r} is not a number") from None
     if not math.isfinite(value):
         raise argparse.ArgumentTypeError(f"must be finite; got {text}")
     return value

@@ -11,7 +11,7 @@ from scipy.stats import beta as beta_dist
 from scipy.stats import chi2
 from sklearn.exceptions import ConvergenceWarning
 
-from .._validation import check_labels, check_proba, check_same_length, check_sample_weight
+from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ._adjust import check_prior, project_to_simplex
 
 __all__ = [
@@ -146,7 +146,7 @@ def _check_confusion(confusion: Any, k: int) -> np.ndarray:
     try:
         c = np.asarray(confusion, dtype=float)
     except (TypeError, ValueError) as exc:
-        raise ValueError(f"`confusion` must be a numeric (k, k) matrix; got {confusion!r}.") from exc
+        raise ValueError(f"`confusion` must be a numeric (k, k) matrix; got {plain(confusion)!r}.") from exc
     if c.shape != (k, k):
         raise ValueError(
             f"`confusion` must have shape ({k}, {k}) to match `proba`; got shape {c.shape}."
@@ -442,13 +442,13 @@ def em_prior(
     src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
     start = src if init is None else check_prior(init, k, name="init", strictly_positive=True)
     if not (isinstance(tol, (int, float)) and tol > 0):
-        raise ValueError(f"`tol` must be a positive number; got {tol!r}.")
+        raise ValueError(f"`tol` must be a positive number; got {plain(tol)!r}.")
     if not (isinstance(max_iter, (int, np.integer)) and max_iter >= 1):
-        raise ValueError(f"`max_iter` must be a positive integer; got {max_iter!r}.")
+        raise ValueError(f"`max_iter` must be a positive integer; got {plain(max_iter)!r}.")
     if not (isinstance(prior_strength, (int, float)) and np.isfinite(prior_strength)
             and prior_strength >= 0):
         raise ValueError(
-            f"`prior_strength` must be a finite non-negative number; got {prior_strength!r}."
+            f"`prior_strength` must be a finite non-negative number; got {plain(prior_strength)!r}."
         )
     _warn_empty_columns(w @ p, "predicted probability mass")
     prior, n_iter, converged, dist = _solve_prior(
@@ -909,11 +909,11 @@ def binomial_interval(
     """
     pr = np.asarray(proportion, dtype=float)
     if not (0.0 < confidence_level < 1.0):
-        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {plain(confidence_level)!r}.")
     if not n > 0:
-        raise ValueError(f"`n` must be positive; got {n!r}.")
+        raise ValueError(f"`n` must be positive; got {plain(n)!r}.")
     if not np.all(np.isfinite(pr)) or np.any((pr < 0) | (pr > 1)):
-        raise ValueError(f"`proportion` must be in [0, 1]; got {proportion!r}.")
+        raise ValueError(f"`proportion` must be in [0, 1]; got {plain(proportion)!r}.")
     alpha = 1.0 - confidence_level
     x = pr * n
     with np.errstate(invalid="ignore"):
