@@ -226,12 +226,12 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             raise ValueError(
                 "`guarantee` must be a dict with keys 'requirement' and 'target' (and optionally "
                 f"'confidence', 'method'), e.g. {{'requirement': 'recall', 'target': 0.9}}; got "
-                f"{g!r}."
+                f"{plain(g)!r}."
             )
         if self.strategy != "tuned" or self.costs is None or callable(self.costs):
             raise ValueError(
                 "`guarantee` needs strategy='tuned' with constant costs (the cutoff is searched "
-                f"among the certified ones); got strategy={self.strategy!r}"
+                f"among the certified ones); got strategy={plain(self.strategy)!r}"
                 f"{' and no costs' if self.costs is None else ''}."
             )
         return dict(g)
