@@ -11,15 +11,14 @@ bootstrap interval for any of them (:func:`bootstrap_interval`). Every metric ta
 from ._bootstrap import BootstrapResult, ConfidenceInterval, bootstrap_interval
 from ._calibration import (
     BrierDecomposition,
-    CalibrationSlopeIntercept,
     ReliabilityTable,
     brier_decomposition,
-    calibration_slope_intercept,
     classwise_calibration_error,
     expected_calibration_error,
     reliability_table,
 )
 from ._scores import brier_score, log_loss, net_benefit, net_benefit_treat_all
+from ._slope import CalibrationSlopeIntercept, calibration_slope_intercept
 
 __all__ = [
     "BootstrapResult",
