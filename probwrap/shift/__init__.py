@@ -4,6 +4,7 @@ Array core: functions and small objects on posteriors, labels and weights; nothi
 about scikit-learn estimators. :class:`probwrap.PriorShiftWrapper` is the estimator face.
 """
 
+from ._alarms import CusumResult, cusum_alarms, cusum_run_length
 from ._adjust import adjust_to_prior, check_prior, project_to_simplex, shift_cutoff
 from ._calibration import BiasCorrectedScaling
 from ._estimate import (
@@ -27,6 +28,9 @@ __all__ = [
     "BiasCorrectedScaling",
     "BoundaryPriorWarning",
     "CALIBRATIONS",
+    "CusumResult",
+    "cusum_alarms",
+    "cusum_run_length",
     "INTERVALS",
     "PriorNotIdentifiedWarning",
     "bca_interval",
