@@ -23,6 +23,7 @@ from .decision import (
     cutoff_interval,
     expected_costs,
     fit_action_budget,
+    guaranteed_cutoff,
     plugin_cutoff,
     search_cutoff,
     tune_class_offsets,
@@ -97,6 +98,14 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         Bootstrap resamples for ``cutoff_interval_``.
     confidence_level : float, default=0.95
         Coverage of ``cutoff_interval_``.
+    guarantee : dict or None, default=None
+        Binary cutoff with ``strategy="tuned"`` only: a requirement the rule must meet on new
+        rows, e.g. ``{"requirement": "recall", "target": 0.9, "confidence": 0.9}`` (keys as the
+        arguments of :func:`probwrap.decision.guaranteed_cutoff`: ``requirement`` and
+        ``target`` required, ``confidence`` default 0.9, ``method`` default
+        ``"high_probability"``). The least-cost cutoff is then searched among the cutoffs
+        certified on the held-out predictions; if none can be certified, :meth:`fit` raises
+        :class:`~probwrap.decision.GuaranteeUnreachableError` (never an unconstrained rule).
     tally_resolution : float, default=1e-3
         Dask input only: bin width on the log-odds scale of the score tallies that the
         predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
@@ -123,6 +132,9 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     heldout_cost_ : float or None
         Mean cost per row of the fitted policy on the held-out predictions (None when the
         strategy needed none: ``"bayes"`` / ``"fixed"`` without a capacity and not frozen).
+    guarantee_ : GuaranteedCutoff or None
+        With ``guarantee``: the certified cutoffs, the achieved value of the requirement on the
+        held-out rows, its guaranteed bound and p-value.
     cutoff_interval_ : CutoffInterval or None
         ``"tuned"`` binary cutoff: bootstrap interval of the cutoff and its spread across folds,
         computed on first access. None otherwise.
@@ -158,6 +170,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         random_state: Any = None,
         n_resamples: int = 200,
         confidence_level: float = 0.95,
+        guarantee: Mapping[str, Any] | None = None,
         tally_resolution: float = 1e-3,
     ) -> None:
         self.estimator = estimator
@@ -171,6 +184,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         self.random_state = random_state
         self.n_resamples = n_resamples
         self.confidence_level = confidence_level
+        self.guarantee = guarantee
         self.tally_resolution = tally_resolution
 
     # -- parameter checks ------------------------------------------------------------------
@@ -200,6 +214,27 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             callable(self.costs) or isinstance(self.costs, Mapping)
         ):
             check_cost_matrix(self.costs)
+        if self.guarantee is not None:
+            self._guarantee_args()
+
+    def _guarantee_args(self) -> dict[str, Any]:
+        g = self.guarantee
+        allowed = {"requirement", "target", "confidence", "method"}
+        if not isinstance(g, Mapping) or not {"requirement", "target"} <= set(g) or (
+            set(g) - allowed
+        ):
+            raise ValueError(
+                "`guarantee` must be a dict with keys 'requirement' and 'target' (and optionally "
+                f"'confidence', 'method'), e.g. {{'requirement': 'recall', 'target': 0.9}}; got "
+                f"{g!r}."
+            )
+        if self.strategy != "tuned" or self.costs is None or callable(self.costs):
+            raise ValueError(
+                "`guarantee` needs strategy='tuned' with constant costs (the cutoff is searched "
+                f"among the certified ones); got strategy={self.strategy!r}"
+                f"{' and no costs' if self.costs is None else ''}."
+            )
+        return dict(g)
 
     def _binary_only(self) -> bool:
         return isinstance(self.costs, Mapping) or (
@@ -297,6 +332,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         budget_index, budget_share = self._resolve_capacity(n_actions)
 
         self.cutoff_ = None
+        self.guarantee_ = None
         self.class_offsets_ = None
         self.cost_curve_ = None
         self.action_budget_ = None
@@ -305,6 +341,11 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         self._interval_cache = None
 
         proba = None if ho is None else self._check_heldout_proba(ho.values, k)
+        if self.guarantee is not None and not self._cutoff_mode:
+            raise ValueError(
+                "`guarantee` applies to a binary cutoff (two classes, two actions, constant "
+                f"costs); here there are {k} classes and {n_actions} actions."
+            )
         if self._cutoff_mode:
             self._fit_cutoff(ho, proba, matrix, budget_share)
         else:
@@ -432,6 +473,16 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     def _fit_cutoff(self, ho, proba, matrix, share) -> None:
         if self.strategy == "fixed":
             cutoff = _check_cutoff(self.cutoff)
+        elif self.guarantee is not None:
+            p = proba[:, 1]
+            g = guaranteed_cutoff(
+                p, ho.y_index, matrix, sample_weight=ho.sample_weight, capacity=share,
+                score_bounds=(0.0, 1.0), **self._guarantee_args(),
+            )
+            self.guarantee_ = g
+            self.cost_curve_ = g.unconstrained
+            self.cutoff_ = g.cutoff
+            return
         elif self.strategy == "tuned" and self.costs is not None:
             p = proba[:, 1]
             res = search_cutoff(
