@@ -4,8 +4,8 @@ Array core: functions and small objects on posteriors, labels and weights; nothi
 about scikit-learn estimators. :class:`probwrap.PriorShiftWrapper` is the estimator face.
 """
 
-from ._alarms import CusumResult, cusum_alarms, cusum_run_length
 from ._adjust import adjust_to_prior, check_prior, project_to_simplex, shift_cutoff
+from ._alarms import CusumResult, cusum_alarms, cusum_run_length
 from ._calibration import BiasCorrectedScaling
 from ._estimate import (
     BoundaryPriorWarning,
