@@ -26,6 +26,7 @@ from ._estimate import (
     acc_prior,
     bbse_prior,
     heldout_confusion,
+    null_harm_scale,
 )
 from ._interval import bca_interval, score_interval
 
@@ -480,9 +481,12 @@ class PriorEstimator:
                               float(self.tol), int(self.max_iter))[0]
             self._warn_boundary(ml, p, wk, n_eff)
         m_t, c_t, _ = _mean_cov(_score_rows(p, src), w)
-        stat, pvalue = _score_stat_moments(
-            (m_t, c_t, n_eff), getattr(self, "_source_score", None), k
-        )
+        source_score = getattr(self, "_source_score", None)
+        stat, pvalue = _score_stat_moments((m_t, c_t, n_eff), source_score, k)
+        mean_cov = c_t / max(n_eff - 1.0, 1.0)
+        if source_score is not None:
+            mean_cov = mean_cov + source_score[1]
+        harm_scale = null_harm_scale(p, w, src, mean_cov)
         bounds, dropped = None, 0
         if self.n_resamples > 0 and interval:
             source = self._source_rows()
@@ -526,6 +530,7 @@ class PriorEstimator:
             identified=point.identified,
             n_dropped=dropped,
             ml_prior=ml,
+            null_harm_scale=harm_scale,
         )
 
     def _warn_boundary(self, ml: np.ndarray, p: np.ndarray, w: np.ndarray, n_eff: float) -> None:
