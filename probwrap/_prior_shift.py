@@ -11,6 +11,7 @@ import numpy as np
 from sklearn.utils.validation import check_is_fitted
 
 from ._heldout import HeldOutClassifierBase, _is_dask, _multiclass_dask
+from ._validation import plain
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
 from .shift._estimate import evidence_cutoff
 from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
@@ -237,7 +238,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         h = self.max_harm
         if h is not None and not (isinstance(h, numbers.Real) and not isinstance(h, bool)
                                   and np.isfinite(h) and h > 0):
-            raise ValueError(f"`max_harm` must be a finite number > 0 or None; got {h!r}.")
+            raise ValueError(f"`max_harm` must be a finite number > 0 or None; got {plain(h)!r}.")
 
     def _resolve_target_prior(self) -> np.ndarray | None:
         prior = self.target_prior

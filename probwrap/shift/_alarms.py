@@ -9,6 +9,8 @@ from typing import Any
 import numpy as np
 from scipy.stats import norm
 
+from .._validation import plain
+
 __all__ = ["CusumResult", "cusum_alarms", "cusum_run_length"]
 
 
@@ -43,7 +45,7 @@ def _positive(value: Any, name: str, allow_zero: bool = False) -> float:
     ok = isinstance(value, numbers.Real) and not isinstance(value, bool) and np.isfinite(value)
     if not ok or value < 0 or (value == 0 and not allow_zero):
         bound = ">= 0" if allow_zero else "> 0"
-        raise ValueError(f"`{name}` must be a finite number {bound}; got {value!r}.")
+        raise ValueError(f"`{name}` must be a finite number {bound}; got {plain(value)!r}.")
     return float(value)
 
 
@@ -116,7 +118,7 @@ def cusum_alarms(
             "`standard_error` must be positive and finite (one number, or one per estimate)."
         )
     if not (isinstance(baseline, numbers.Real) and np.isfinite(baseline)):
-        raise ValueError(f"`baseline` must be a finite number; got {baseline!r}.")
+        raise ValueError(f"`baseline` must be a finite number; got {plain(baseline)!r}.")
     k = _positive(reference, "reference", allow_zero=True)
     h = _positive(decision_interval, "decision_interval")
     z = (x - float(baseline)) / se
@@ -184,9 +186,9 @@ def cusum_run_length(
     k = _positive(reference, "reference", allow_zero=True)
     h = _positive(decision_interval, "decision_interval")
     if not (isinstance(shift, numbers.Real) and np.isfinite(shift)):
-        raise ValueError(f"`shift` must be a finite number; got {shift!r}.")
+        raise ValueError(f"`shift` must be a finite number; got {plain(shift)!r}.")
     if not (isinstance(n_states, numbers.Integral) and n_states >= 2):
-        raise ValueError(f"`n_states` must be an integer >= 2; got {n_states!r}.")
+        raise ValueError(f"`n_states` must be an integer >= 2; got {plain(n_states)!r}.")
     if two_sided:
         up = cusum_run_length(shift, reference=k, decision_interval=h, n_states=n_states)
         down = cusum_run_length(-shift, reference=k, decision_interval=h, n_states=n_states)
