@@ -20,6 +20,7 @@ from ._heldout import (
     _multiclass_dask,
     check_fitted,
 )
+from ._validation import plain
 from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
 from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
@@ -266,8 +267,8 @@ class CalibrationWrapper(HeldOutClassifierBase):
                     self._auto_names(len(ho.y_index), n_maps), scores.ndim == 1
                 )
                 warnings.warn(
-                    f"CalibrationWrapper(method='auto'): {self.method_!r} reached a boundary on "
-                    f"all held-out rows ({hit}); using {fallback!r} instead.",
+                    f"CalibrationWrapper(method='auto'): {plain(self.method_)!r} reached a boundary on "
+                    f"all held-out rows ({hit}); using {plain(fallback)!r} instead.",
                     UserWarning,
                     stacklevel=2,
                 )
@@ -315,7 +316,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
         if not isinstance(self.method, str) or self.method not in valid:
             raise ValueError(
                 f"`method` must be one of {valid} or a CalibrationMap instance; got "
-                f"{self.method!r}."
+                f"{plain(self.method)!r}."
             )
         if self.method == "auto":
             self._candidate_names()
@@ -324,7 +325,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
             and not isinstance(self.clip, bool)
             and 0.0 < self.clip < 0.5
         ):
-            raise ValueError(f"`clip` must be None or a float in (0, 0.5); got {self.clip!r}.")
+            raise ValueError(f"`clip` must be None or a float in (0, 0.5); got {plain(self.clip)!r}.")
 
     def _candidate_names(self) -> list[str]:
         names = list(CALIBRATION_METHODS) if self.candidates is None else list(self.candidates)
@@ -332,7 +333,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
         if unknown or not names:
             raise ValueError(
                 f"`candidates` must be a non-empty list drawn from {tuple(CALIBRATION_METHODS)}; "
-                f"got {self.candidates!r}."
+                f"got {plain(self.candidates)!r}."
             )
         return names
 
@@ -530,8 +531,9 @@ class CalibrationWrapper(HeldOutClassifierBase):
         return sorted(names, key=key)
 
     def _fallback_name(self, names: list[str], binary: bool) -> str:
-        """The most regularised candidate: Platt (binary) or temperature (multiclass) scaling
-        with smoothed targets when listed, else the candidate with the fewest parameters."""
+        """The most regularised candidate: Platt scaling with smoothed targets (binary) or
+        temperature scaling with its weak prior (multiclass) when listed, else the candidate
+        with the fewest parameters."""
         for preferred in (("platt", "temperature") if binary else ("temperature", "platt")):
             if preferred in names:
                 return preferred
@@ -598,6 +600,11 @@ class CalibrationWrapper(HeldOutClassifierBase):
                 fine = [nm for nm in active if states[nm]["boundary"] is None]
                 if not fine or wt.sum() <= 0:
                     continue
+                for nm in [a for a in active if a not in fine]:
+                    # not eligible whatever the other folds give: not scored further
+                    notes[nm] = f"not eligible: the fit reached a boundary ({states[nm]['boundary']})"
+                    active.remove(nm)
+                    del states[nm]
                 wn = wt / wt.sum()
                 n_eff = float(wt.sum() ** 2 / (wt @ wt))
                 loss = {nm: states[nm]["per_row"][test] for nm in active}
@@ -608,7 +615,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
                     se = float(np.sqrt(max(float(wn @ (d - dbar) ** 2), 0.0) / max(n_eff - 1.0, 1.0)))
                     if dbar > _RACE_SE * se and dbar > 0:
                         notes[nm] = (
-                            f"left out after fold {f}: log loss {dbar:.4g} above {best!r} there, "
+                            f"left out after fold {f}: log loss {dbar:.4g} above {plain(best)!r} there, "
                             f"{dbar / se if se > 0 else np.inf:.1f} standard errors"
                         )
                         active.remove(nm)
@@ -639,7 +646,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
             fallback = self._fallback_name(names, binary)
             reason = (
                 f"a class has only {int(present.min())} held-out row(s), too few to score "
-                f"candidate maps by cross-validation; using {fallback!r} (smoothed targets), "
+                f"candidate maps by cross-validation; using {plain(fallback)!r}, "
                 "the most regularised map"
             )
             warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
@@ -693,7 +700,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
         reason = (
             "no candidate map could be scored and used: "
             + "; ".join(f"{nm}: {txt}" for nm, txt in notes.items())
-            + f"; using {fallback!r} (smoothed targets), the most regularised map"
+            + f"; using {plain(fallback)!r}, the most regularised map"
         )
         warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
         notes.setdefault(fallback, "chosen as the fallback: no candidate was eligible")

@@ -12,7 +12,7 @@ from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import column_or_1d
 
 from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, check_fitted, is_frozen
-from ._validation import check_labels, check_sample_weight
+from ._validation import check_labels, check_sample_weight, plain
 from .decision import (
     apply_class_offsets,
     budget_actions,
@@ -215,7 +215,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         if not isinstance(self.keep_heldout, (bool, np.bool_)):
             raise ValueError(f"`keep_heldout` must be True or False; got {self.keep_heldout!r}.")
         if self.strategy not in _STRATEGIES:
-            raise ValueError(f"`strategy` must be one of {_STRATEGIES}; got {self.strategy!r}.")
+            raise ValueError(f"`strategy` must be one of {_STRATEGIES}; got {plain(self.strategy)!r}.")
         if self.strategy == "fixed" and self.cutoff is None:
             raise ValueError(
                 "`cutoff` must be given with strategy='fixed' (a probability cutoff, or "
@@ -223,8 +223,8 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             )
         if self.strategy != "fixed" and self.cutoff is not None:
             raise ValueError(
-                f"`cutoff` is only used with strategy='fixed'; got cutoff={self.cutoff!r} with "
-                f"strategy={self.strategy!r}. Set cutoff=None or strategy='fixed'."
+                f"`cutoff` is only used with strategy='fixed'; got cutoff={plain(self.cutoff)!r} with "
+                f"strategy={plain(self.strategy)!r}. Set cutoff=None or strategy='fixed'."
             )
         if isinstance(self.capacity, Mapping):
             if len(self.capacity) != 1:
@@ -251,12 +251,12 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             raise ValueError(
                 "`guarantee` must be a dict with keys 'requirement' and 'target' (and optionally "
                 f"'confidence', 'method'), e.g. {{'requirement': 'recall', 'target': 0.9}}; got "
-                f"{g!r}."
+                f"{plain(g)!r}."
             )
         if self.strategy != "tuned" or self.costs is None or callable(self.costs):
             raise ValueError(
                 "`guarantee` needs strategy='tuned' with constant costs (the cutoff is searched "
-                f"among the certified ones); got strategy={self.strategy!r}"
+                f"among the certified ones); got strategy={plain(self.strategy)!r}"
                 f"{' and no costs' if self.costs is None else ''}."
             )
         return dict(g)
@@ -490,7 +490,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             matches = np.flatnonzero(self.actions_ == label)
             if matches.shape[0] != 1:
                 raise ValueError(
-                    f"`capacity` names action {label!r}, which is not among the actions "
+                    f"`capacity` names action {plain(label)!r}, which is not among the actions "
                     f"{self.actions_.tolist()}."
                 )
             return int(matches[0]), check_capacity(share)
@@ -552,7 +552,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             if offsets.shape != (k,) or not np.all(np.isfinite(offsets)):
                 raise ValueError(
                     f"`cutoff` must be finite per-class offsets of shape ({k},); got "
-                    f"{self.cutoff!r}."
+                    f"{plain(self.cutoff)!r}."
                 )
         elif self.strategy == "tuned" and self.costs is not None:
             res = tune_class_offsets(proba, ho.y_index, costs, sample_weight=ho.sample_weight)
@@ -731,10 +731,10 @@ def _summary_interval(summary: dict, matrix, share, policy: CostPolicyWrapper) -
 
 def _check_cutoff(cutoff: Any) -> float:
     if not _scalar_cutoff(cutoff) or not np.isfinite(float(cutoff)):
-        raise ValueError(f"`cutoff` must be a finite probability in [0, 1]; got {cutoff!r}.")
+        raise ValueError(f"`cutoff` must be a finite probability in [0, 1]; got {plain(cutoff)!r}.")
     value = float(cutoff)
     if not 0.0 <= value <= 1.0:
-        raise ValueError(f"`cutoff` must be a probability in [0, 1]; got {cutoff!r}.")
+        raise ValueError(f"`cutoff` must be a probability in [0, 1]; got {plain(cutoff)!r}.")
     return value
 
 

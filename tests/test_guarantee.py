@@ -249,3 +249,31 @@ def test_wrapper_guarantee_refuses_what_it_cannot_certify_or_apply():
     with pytest.raises(ValueError, match="keys 'requirement' and 'target'"):
         CostPolicyWrapper(frozen, costs={"fp": 1, "fn": 1}, strategy="tuned",
                           guarantee={"recall": 0.9}).fit(X, y)
+
+
+def test_command_line_guarantee_matches_the_array_function(tmp_path, capsys):
+    import json
+
+    import pandas as pd
+
+    from probwrap.cli import main
+
+    frozen, X, y = _frozen_model()
+    p = frozen.predict_proba(X)[:, 1]
+    path = tmp_path / "held.csv"
+    pd.DataFrame({"risk": p, "malignant": y}).to_csv(path, index=False)
+    argv = ["cutoff", "--scores", str(path), "--score-column", "risk", "--label-column",
+            "malignant", "--cost-fp", "1", "--cost-fn", "0.3", "--resamples", "0",
+            "--guarantee", "recall", "--guarantee-target", "0.95", "--format", "json"]
+    assert main(argv) == 0
+    out = json.loads(capsys.readouterr().out)["guarantee"]
+    g = guaranteed_cutoff(p, y, {"fp": 1, "fn": 0.3}, requirement="recall", target=0.95,
+                          score_bounds=(0, 1))
+    assert out["cutoff"] == g.cutoff and out["bound"] == pytest.approx(g.bound)
+    assert out["p_value"] == pytest.approx(g.p_value)
+    # unreachable: a one-line error and a non-zero exit, no rule printed
+    argv[-5:-2] = ["recall", "--guarantee-target", "0.999"]
+    argv += ["--guarantee-confidence", "0.99"]
+    assert main(argv) != 0
+    err = capsys.readouterr().err
+    assert "No cutoff can be certified" in err and "Traceback" not in err

@@ -6,9 +6,10 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ..metrics import expected_calibration_error, reliability_table
 from ._common import binary_labels, class_proba, estimator_classes
-from ._intervals import consistency_band, wilson_interval
+from ._intervals import bin_counts, consistency_band, wilson_interval
 from ._style import PALETTE, new_axes, style_axes
 
 __all__ = ["ReliabilityDiagram"]
@@ -164,7 +165,7 @@ class ReliabilityDiagram:
         ReliabilityDiagram
         """
         if band not in _BANDS:
-            raise ValueError(f"`band` must be one of {_BANDS}; got {band!r}.")
+            raise ValueError(f"`band` must be one of {_BANDS}; got {plain(band)!r}.")
         y_arr = np.asarray(y_true)
         p = np.asarray(y_prob, dtype=float)
         if p.ndim == 2:
@@ -227,7 +228,7 @@ class ReliabilityDiagram:
         else:
             if not (isinstance(class_index, (int, np.integer)) and 0 <= class_index < k):
                 raise ValueError(
-                    f"`class_index` must be a column index in [0, {k}); got {class_index!r}."
+                    f"`class_index` must be a column index in [0, {k}); got {plain(class_index)!r}."
                 )
             # validates the labels and the probabilities once, for the whole matrix
             reliability_table(y_arr, p, n_bins=1, sample_weight=sample_weight, labels=labels)
@@ -333,9 +334,8 @@ class ReliabilityDiagram:
 def _bands(table, values, band, sample_weight, confidence_level, n_draws, random_state):
     """Per-bin Wilson interval, consistency band, or NaN (no band)."""
     if band == "wilson":
-        return wilson_interval(
-            table.observed_frequency * table.weight, table.weight, confidence_level
-        )
+        n = bin_counts(table.weight, sample_weight)
+        return wilson_interval(table.observed_frequency * n, n, confidence_level)
     if band == "consistency":
         # for the top-label form each row's outcome (top class correct) would be a Bernoulli
         # draw with its confidence if calibrated, so the same simulation applies to `values`
