@@ -19,6 +19,14 @@ from ._calibration import (
     expected_calibration_error,
     reliability_table,
 )
+from ._calibration_tests import (
+    HosmerLemeshowResult,
+    SpiegelhalterResult,
+    debiased_calibration_error,
+    hosmer_lemeshow_test,
+    smooth_calibration_error,
+    spiegelhalter_z_test,
+)
 from ._scores import brier_score, log_loss, net_benefit, net_benefit_treat_all
 
 __all__ = [
@@ -26,15 +34,21 @@ __all__ = [
     "BrierDecomposition",
     "CalibrationSlopeIntercept",
     "ConfidenceInterval",
+    "HosmerLemeshowResult",
     "ReliabilityTable",
+    "SpiegelhalterResult",
     "bootstrap_interval",
     "brier_decomposition",
     "brier_score",
     "calibration_slope_intercept",
     "classwise_calibration_error",
+    "debiased_calibration_error",
     "expected_calibration_error",
+    "hosmer_lemeshow_test",
     "log_loss",
     "net_benefit",
     "net_benefit_treat_all",
     "reliability_table",
+    "smooth_calibration_error",
+    "spiegelhalter_z_test",
 ]
