@@ -8,6 +8,7 @@ something is drawn; figures are created without pyplot, so no window opens.
 """
 
 from ._actions import ActionShareDisplay
+from ._corp import IsotonicReliabilityDiagram
 from ._cost import CostCurveDisplay
 from ._decision_curve import DecisionCurveDisplay
 from ._intervals import consistency_band, wilson_interval
@@ -21,6 +22,7 @@ __all__ = [
     "ClassPriorDisplay",
     "CostCurveDisplay",
     "DecisionCurveDisplay",
+    "IsotonicReliabilityDiagram",
     "PrevalenceDriftDisplay",
     "ReliabilityDiagram",
     "consistency_band",
