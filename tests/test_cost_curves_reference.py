@@ -129,3 +129,15 @@ def test_bad_input_names_the_argument():
         cost_curve([0, 1], [0.2, 0.7], n_points=1)
     with pytest.raises(ValueError, match="both classes"):
         cost_curve([1, 1], [0.2, 0.7])
+
+
+def test_displays_draw_the_numbers(cancer_holdout):
+    from probwrap.plot import CostRangeDisplay, GainChartDisplay
+
+    y, p = cancer_holdout
+    disp = CostRangeDisplay.from_predictions(y, p, n_points=51)
+    np.testing.assert_array_equal(disp.lowest_line_.get_ydata(), disp.cost.lowest_cost)
+    np.testing.assert_array_equal(disp.brier_line_.get_ydata(), disp.brier.loss)
+    assert f"{skm.brier_score_loss(y, p):.4f}" in disp.brier_ax_.get_title()
+    gain = GainChartDisplay.from_predictions(y, p)
+    np.testing.assert_array_equal(gain.line_.get_ydata()[1:], gain.result.gain)
