@@ -8,7 +8,8 @@ bootstrap interval for any of them (:func:`bootstrap_interval`). Calibration tes
 with known behaviour (:func:`hosmer_lemeshow_test`, :func:`spiegelhalter_z_test`,
 :func:`smooth_calibration_error`, :func:`debiased_calibration_error`), the bin-free CORP
 reliability curve and score decomposition (:func:`corp_reliability`, :func:`score_decomposition`),
-performance over uncertain costs (:func:`cost_curve`, :func:`brier_curve`, :func:`lift_gain`).
+performance over uncertain costs (:func:`cost_curve`, :func:`brier_curve`, :func:`lift_gain`),
+and all of the main checks group by group (:func:`calibration_by_group`).
 Every metric takes an optional ``sample_weight`` in which weight 2 counts a row twice.
 """
 
@@ -39,6 +40,7 @@ from ._cost_curves import (
     cost_curve,
     lift_gain,
 )
+from ._groups import GroupCheck, GroupChecks, GroupGap, calibration_by_group
 from ._reliability_corp import (
     CorpReliability,
     ScoreDecomposition,
@@ -55,6 +57,9 @@ __all__ = [
     "ConfidenceInterval",
     "CorpReliability",
     "CostCurve",
+    "GroupCheck",
+    "GroupChecks",
+    "GroupGap",
     "HosmerLemeshowResult",
     "LiftGain",
     "ReliabilityTable",
@@ -64,6 +69,7 @@ __all__ = [
     "brier_curve",
     "brier_decomposition",
     "brier_score",
+    "calibration_by_group",
     "calibration_slope_intercept",
     "classwise_calibration_error",
     "corp_reliability",
