@@ -18,7 +18,6 @@ import numpy as np
 
 from .._validation import check_same_length, plain
 from ._bootstrap import bootstrap_interval
-from ._calibration import calibration_slope_intercept
 from ._calibration_tests import smooth_calibration_error
 from ._inputs import prepare_binary
 from ._scores import brier_score, log_loss
@@ -188,6 +187,8 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
     both = pos.sum() > 0 and neg.sum() > 0
 
     def slope_parts():
+        from . import calibration_slope_intercept  # at call time: its module may move
+
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", UserWarning)
