@@ -9,7 +9,6 @@ on plain arrays; ``probwrap.datasets`` makes the invented demo data.
 from ._calibration_wrapper import CalibrationWrapper
 from ._cost_policy import CostPolicyWrapper
 from ._prior_shift import PriorShiftWrapper
-
-__version__ = "0.1.0"
+from ._version import __version__
 
 __all__ = ["CalibrationWrapper", "CostPolicyWrapper", "PriorShiftWrapper", "__version__"]

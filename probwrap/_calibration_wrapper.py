@@ -288,7 +288,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
     def _fit_multiclass_dask(self, X: Any, y: Any, sample_weight: Any) -> CalibrationWrapper:
         """Multiclass Dask rows with a frozen estimator: temperature scaling by reductions over
         the score blocks, binary maps one-vs-rest from per-class score tallies."""
-        from .scale._multiclass_wrappers import fit_multiclass_calibration
+        from .scale._entry import fit_multiclass_calibration
 
         if isinstance(self.method, CalibrationMap):
             self.method_ = type(self.method).__name__

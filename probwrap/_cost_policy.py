@@ -343,7 +343,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
                 "strategy='bayes' or 'fixed' without a capacity; tuning or fitting a capacity "
                 "on such rows needs them in memory."
             )
-        from .scale._multiclass_wrappers import first_block_row_costs, heldout_cost_dask
+        from .scale._entry import first_block_row_costs, heldout_cost_dask
 
         est = self.estimator
         self.estimator_ = est
@@ -533,7 +533,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         if self._interval_inputs is None:
             return None
         if self._interval_cache is None and isinstance(self._interval_inputs[0], str):
-            from .scale._bootstrap import tally_cutoff_interval
+            from .scale._entry import tally_cutoff_interval
 
             _, tally, matrix, share = self._interval_inputs
             self._interval_cache = tally_cutoff_interval(

@@ -135,7 +135,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         if _is_dask(X) or _is_dask(y) or _is_dask(sample_weight):
             # Dask input (frozen estimators only): predictions are tallied block by block on the
             # cluster; the held-out rows are the tally's weighted (bin, class) rows.
-            from .scale._dask import heldout_from_dask
+            from .scale._entry import heldout_from_dask
 
             response = _resolve_response(self.estimator, response or self._heldout_response)
             return heldout_from_dask(self, X, y, sample_weight, response)
@@ -257,7 +257,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
     # -- prediction helpers ----------------------------------------------------------------
     def _dask_predict(self, method: Any, X: Any, n_columns: int | None, dtype: Any = float):
         """Apply ``method`` to every block of Dask ``X``; returns a Dask array."""
-        from .scale._dask import dask_predict
+        from .scale._entry import dask_predict
 
         check_is_fitted(self, "estimator_")
         return dask_predict(method, X, n_columns, dtype)

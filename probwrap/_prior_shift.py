@@ -270,7 +270,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # Multiclass Dask rows: no tally (a posterior vector has no single score); the
             # calibration, source prior and confusion matrices are fitted by reductions over
             # the model's posteriors kept on the workers (no bootstrap interval).
-            from .scale._multiclass import fit_multiclass_source
+            from .scale._entry import fit_multiclass_source
 
             est = fit_multiclass_source(self, X, y, sample_weight)
             self._source_tally = None
@@ -353,7 +353,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if multiclass and (_is_dask(X) or _is_dask(sample_weight)):
             # Multiclass Dask rows: EM / BBSE as reductions over the calibrated posteriors on
             # the workers (one pass per EM iteration); a point estimate, no interval.
-            from .scale._multiclass import estimate_multiclass_target
+            from .scale._entry import estimate_multiclass_target
 
             res = estimate_multiclass_target(est, self.estimator_, X, sample_weight)
             return self._finish_adapt(res, None)
@@ -362,7 +362,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # estimated from the tally's weighted rows. Bootstrapping tally rows would not
             # resample the original rows, so the interval comes from Poisson replicates tallied
             # alongside.
-            from .scale._dask import owner_resolution, unlabelled_proba_from_dask
+            from .scale._entry import owner_resolution, unlabelled_proba_from_dask
 
             proba, sample_weight, target = unlabelled_proba_from_dask(
                 self.estimator_, X, sample_weight, n_replicates=est.n_resamples,
@@ -376,8 +376,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if poisson:
             # Some rows are tallied: one Poisson bootstrap over tallied and in-memory rows alike.
             from ._validation import check_sample_weight
-            from .scale._bootstrap import tally_prior_interval
-            from .scale._tally import replicate_seed
+            from .scale._entry import replicate_seed, tally_prior_interval
             from .shift._estimator import _widen
 
             rows = None if target is None else _tally_rows(target)
@@ -465,7 +464,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self._check_features(X, "passed to monitor")
         if _is_dask(X) or _is_dask(sample_weight):
             # One batch per Dask block, estimated on the worker holding it.
-            from .scale._dask import monitor_dask
+            from .scale._entry import monitor_dask
 
             return monitor_dask(self, X, batches, batch_size, sample_weight)
         proba = self._inner_output(X, "predict_proba")
@@ -482,7 +481,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         from sklearn.utils import check_random_state
 
         from ._validation import check_sample_weight
-        from .scale._bootstrap import tally_prior_interval
+        from .scale._entry import tally_prior_interval
 
         point = copy.copy(est)
         point.n_resamples = 0

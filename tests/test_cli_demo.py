@@ -15,7 +15,7 @@ from probwrap.decision import search_cutoff
 @pytest.fixture(autouse=True)
 def _no_progress_lines(monkeypatch):
     """In-process runs: no progress lines, however slow the machine (tested on their own)."""
-    import probwrap.cli._common as common
+    import probwrap.cli._progress as common
 
     monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
 

@@ -21,7 +21,7 @@ from probwrap.decision import search_cutoff
 @pytest.fixture(autouse=True)
 def _no_progress_lines(monkeypatch):
     """In-process runs: no progress lines, however slow the machine (tested on their own)."""
-    import probwrap.cli._common as common
+    import probwrap.cli._progress as common
 
     monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
 
@@ -147,7 +147,7 @@ def test_calibrate_fit_records_the_positive_label(text_files, tmp_path, capsys):
     ],
 )
 def test_read_labels_rules(labels, positive, expected):
-    from probwrap.cli._common import read_labels
+    from probwrap.cli._tables import read_labels
 
     frame = pd.DataFrame({"y": labels})
     y, _ = read_labels(frame, "y", "f.csv", positive=positive)
@@ -156,7 +156,8 @@ def test_read_labels_rules(labels, positive, expected):
 
 @pytest.mark.parametrize("labels", [[1, 2], [-1, 1], ["ok", "failed"]])
 def test_read_labels_needs_the_option_for_labels_other_than_0_1(labels):
-    from probwrap.cli._common import DataError, read_labels
+    from probwrap.cli._common import DataError
+    from probwrap.cli._tables import read_labels
 
     with pytest.raises(DataError, match="--positive-label"):
         read_labels(pd.DataFrame({"y": labels}), "y", "f.csv")

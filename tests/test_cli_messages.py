@@ -15,13 +15,14 @@ import pandas as pd
 import pytest
 
 from probwrap.cli import build_parser, main
-from probwrap.cli._common import MIN_RESAMPLES, numeric_column, read_table
+from probwrap.cli._common import MIN_RESAMPLES
+from probwrap.cli._tables import numeric_column, read_table
 
 
 @pytest.fixture(autouse=True)
 def _no_progress_lines(monkeypatch):
     """In-process runs: no progress lines, however slow the machine (tested on their own)."""
-    import probwrap.cli._common as common
+    import probwrap.cli._progress as common
 
     monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
 
@@ -322,7 +323,7 @@ def test_demo_same_seed_same_output(tmp_path):
 def test_progress_off_a_terminal_prints_plain_lines_for_long_steps(monkeypatch, capsys):
     import time
 
-    import probwrap.cli._common as common
+    import probwrap.cli._progress as common
 
     monkeypatch.setattr(common, "_terminal", lambda: False)
     monkeypatch.setattr(common, "PROGRESS_DELAY", 0.2)
@@ -340,7 +341,7 @@ def test_progress_off_a_terminal_prints_plain_lines_for_long_steps(monkeypatch, 
 def test_progress_on_a_terminal_counts_steps_to_the_end(monkeypatch, capsys):
     import time
 
-    import probwrap.cli._common as common
+    import probwrap.cli._progress as common
 
     monkeypatch.setattr(common, "_terminal", lambda: True)
     monkeypatch.setattr(common, "PROGRESS_DELAY", 0.0)

@@ -27,7 +27,7 @@ from probwrap.shift import PriorEstimator, em_prior, shift_test
 @pytest.fixture(autouse=True)
 def _no_progress_lines(monkeypatch):
     """In-process runs: no progress lines, however slow the machine (tested on their own)."""
-    import probwrap.cli._common as common
+    import probwrap.cli._progress as common
 
     monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
 

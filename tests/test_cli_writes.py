@@ -21,13 +21,14 @@ import pandas as pd
 import pytest
 
 from probwrap.cli import main
-from probwrap.cli._common import DataError, write_atomic, write_text
+from probwrap.cli._common import DataError
+from probwrap.cli._files import write_atomic, write_text
 
 
 @pytest.fixture(autouse=True)
 def _no_progress_lines(monkeypatch):
     """In-process runs: no progress lines, however slow the machine (tested on their own)."""
-    import probwrap.cli._common as common
+    import probwrap.cli._progress as common
 
     monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
 
@@ -266,7 +267,7 @@ def test_two_runs_writing_the_same_output_leave_one_whole_file(scores, capsys):
 def test_permission_denied_is_a_one_line_error(scores, capsys, monkeypatch, verb):
     # a read-only folder, as a non-root user meets it (root may write anywhere, so the
     # refusal is simulated at the operating-system call)
-    import probwrap.cli._common as common
+    import probwrap.cli._files as common
 
     def denied(*args, **kwargs):
         raise PermissionError(13, "Permission denied")

@@ -145,3 +145,30 @@ def test_action_budget_with_a_huge_cost_elsewhere_and_a_tiny_saving():
     budget = fit_action_budget(E, 1, 0.0625)
     taken = budget_actions(E, 1, budget.saving_threshold) == 1
     assert budget.binding and taken.sum() == 0
+
+
+def test_realised_cost_of_huge_costs_and_weights_is_the_exact_weighted_mean():
+    # Reference: the weighted mean computed exactly with Python's fractions (rational
+    # arithmetic, no rounding), then rounded once to a float. The unscaled sum of these terms
+    # is about 1e308 * 1e307 * 60, far beyond the largest double, and used to give inf / nan.
+    from fractions import Fraction
+
+    from probwrap.decision import realised_cost
+
+    rng = np.random.default_rng(11)
+    n = 60
+    y = rng.integers(0, 2, size=n)
+    a = rng.integers(0, 2, size=n)
+    matrix = np.array([[-1e307, 1.5e308], [1.7e308, 2.0**-1074]])
+    w = rng.uniform(0.5, 1.0, size=n) * 1e307
+    got = realised_cost(y, a, costs=matrix, classes=[0, 1], sample_weight=w)
+    values = matrix[y, a]
+    exact = sum(Fraction(wi) * Fraction(vi) for wi, vi in zip(w, values, strict=True)) / sum(
+        Fraction(wi) for wi in w)
+    # n terms of a float dot product: relative error at most about n * eps ~ 1.3e-14
+    assert np.isfinite(got)
+    assert got == pytest.approx(float(exact), rel=n * np.finfo(float).eps)
+    # weights are frequencies: scaling all of them changes nothing (bit-identical here,
+    # since the scaling inside is by powers of two)
+    assert realised_cost(y, a, costs=matrix, classes=[0, 1], sample_weight=w / 1e307 * 2.0**-20) \
+        == pytest.approx(got, rel=n * np.finfo(float).eps)

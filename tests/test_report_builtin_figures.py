@@ -20,7 +20,8 @@ from probwrap.metrics import net_benefit, net_benefit_treat_all, reliability_tab
 from probwrap.report._builtin_figures import THRESHOLDS, builtin_figures
 from probwrap.report._content import collect_content
 from probwrap.report._html import render_html
-from probwrap.report._svg_charts import Chart, pixel_to_data
+from probwrap.report._svg_axes import pixel_to_data
+from probwrap.report._svg_charts import Chart
 
 SVG = "{http://www.w3.org/2000/svg}"
 TOL = 1e-6
@@ -294,6 +295,7 @@ def test_works_with_matplotlib_blocked(monkeypatch, content):
         monkeypatch.setitem(sys.modules, name, None)
     monkeypatch.setitem(sys.modules, "matplotlib", None)
     for name in ("probwrap.report._builtin_figures", "probwrap.report._svg_charts",
+                 "probwrap.report._svg_axes",
                  "probwrap.plot._intervals", "probwrap.plot._style"):
         if name in sys.modules:
             monkeypatch.delitem(sys.modules, name)

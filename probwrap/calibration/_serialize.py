@@ -268,7 +268,7 @@ def map_to_dict(
         )
     _check_scale(score_scale, "`score_scale`")
     _check_plain_tree(dict(metadata), "`metadata`")
-    from probwrap import __version__
+    from .._version import __version__
 
     fitted: dict[str, Any] = {}
     for attr, kind in fitted_kinds.items():

@@ -29,7 +29,7 @@ def build_parser() -> argparse.ArgumentParser:
         description="Calibrated probabilities, least-expected-cost decisions and base-rate "
         "shift, from the command line.",
     )
-    from probwrap import __version__
+    from probwrap._version import __version__
 
     parser.add_argument("--version", action="version", version=f"probwrap {__version__}")
     sub = parser.add_subparsers(dest="verb", metavar="VERB")

@@ -22,23 +22,16 @@ from sklearn.base import BaseEstimator, ClassifierMixin
 
 from ._common import (
     DataError,
-    Stages,
     add_positive_label_flag,
-    check_out_suffix,
     check_ranking,
     check_row_count,
-    check_writable,
     clean,
-    numeric_column,
-    probability_column,
-    progress,
-    read_labels,
-    read_table,
     shown,
     whole_number,
-    write_table,
-    write_text,
 )
+from ._files import check_out_suffix, check_writable, write_table, write_text
+from ._progress import Stages, progress
+from ._tables import numeric_column, probability_column, read_labels, read_table
 
 __all__ = [
     "register", "read_labels", "read_scores", "write_table", "add_scale_flag", "whole_number",

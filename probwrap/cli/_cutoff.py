@@ -18,16 +18,15 @@ import numpy as np
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
-    Stages,
     add_format_flag,
     add_positive_label_flag,
     add_resamples_flag,
     check_ranking,
     check_row_count,
-    read_labels,
-    read_table,
     shown,
 )
+from ._progress import Stages
+from ._tables import read_labels, read_table
 
 __all__ = ["register", "cutoff_summary"]
 

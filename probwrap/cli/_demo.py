@@ -8,7 +8,9 @@ from pathlib import Path
 
 import numpy as np
 
-from ._common import DataError, Stages, check_writable, require, whole_number, write_text
+from ._common import DataError, require, whole_number
+from ._files import check_writable, write_text
+from ._progress import Stages
 
 __all__ = ["register", "run_demo", "run_three_way_demo", "parcel_costs"]
 

@@ -26,17 +26,15 @@ import numpy as np
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
-    Stages,
     add_format_flag,
     add_positive_label_flag,
     add_resamples_flag,
     check_ranking,
     check_row_count,
-    progress,
-    read_labels,
-    read_table,
 )
 from ._cutoff import _level
+from ._progress import Stages, progress
+from ._tables import read_labels, read_table
 
 __all__ = ["register", "prevalence_from_source", "prevalence_from_reference"]
 

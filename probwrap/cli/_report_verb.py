@@ -13,24 +13,19 @@ from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     MIN_RESAMPLES,
     DataError,
-    Stages,
     add_format_flag,
     add_positive_label_flag,
     add_resamples_flag,
-    check_out_suffix,
     check_ranking,
     check_row_count,
-    check_writable,
     clean,
-    numeric_column,
-    probability_column,
-    read_labels,
-    read_table,
     require,
     shown,
     whole_number,
-    write_text,
 )
+from ._files import check_out_suffix, check_writable, write_text
+from ._progress import Stages
+from ._tables import numeric_column, probability_column, read_labels, read_table
 
 __all__ = ["register"]
 
@@ -173,7 +168,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         if bad.any():
             row = int(np.flatnonzero(bad)[0])
             raise DataError(f"{path}: row {row + 2} (counting the header as row 1): the class "
-                            f"probabilities sum to {sums[row]!r}, not 1")
+                            f"probabilities sum to {shown(sums[row])}, not 1")
         return P
 
     with Stages("report", ["reading", "computing the report", "writing"]) as stages:
@@ -338,6 +333,7 @@ def _handler(args: argparse.Namespace) -> int:
         content = _build_and_write(
             args, stages, y_true=y, y_prob=p, costs=costs, capacity=args.capacity,
             unlabelled_prob=q, batch_size=args.batch_size,
+            class_names=[str(v) for v in labels],
         )
     summary = {"out": args.out, "n_rows": int(content.n_rows),
                "labels": {"negative": labels[0], "positive": labels[1]}}

@@ -16,10 +16,8 @@ Every metric takes an optional ``sample_weight`` in which weight 2 counts a row 
 from ._bootstrap import BootstrapResult, ConfidenceInterval, bootstrap_interval
 from ._calibration import (
     BrierDecomposition,
-    CalibrationSlopeIntercept,
     ReliabilityTable,
     brier_decomposition,
-    calibration_slope_intercept,
     classwise_calibration_error,
     expected_calibration_error,
     reliability_table,
@@ -48,6 +46,7 @@ from ._reliability_corp import (
     score_decomposition,
 )
 from ._scores import brier_score, log_loss, net_benefit, net_benefit_treat_all
+from ._slope import CalibrationSlopeIntercept, calibration_slope_intercept
 
 __all__ = [
     "BootstrapResult",

@@ -11,9 +11,11 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
+from ._binary_rules import RuleRow
 from ._common import Recommendation, ReportNote
-from ._content import MetricRow, ReportContent, RuleRow, collect_content
-from ._general import ActionRuleRow, MulticlassReportContent
+from ._content import MetricRow, ReportContent, collect_content
+from ._general import MulticlassReportContent
+from ._general_rules import ActionRuleRow
 from ._html import CAUTIONS, figure_to_svg, make_figures, render_html
 
 __all__ = [
@@ -137,8 +139,10 @@ def write_report(
         their weighted mean. A :class:`~probwrap.CostPolicyWrapper` with costs given as a
         function of ``X`` supplies them itself.
     class_names : sequence of str, optional
-        General form: display names of the classes, one per column of the probabilities
-        (default: the class labels). With ``y_true``/``y_prob``, labels are column indices
+        Display names of the classes, one per column of the probabilities (default: the class
+        labels). Binary: ``(negative, positive)``, named in the cost table and wherever the
+        text speaks of the positive class (default: the labels, or "negative"/"positive" for
+        0/1 labels). General form: with ``y_true``/``y_prob``, labels are column indices
         ``0..k-1`` or any labels whose sorted distinct values match the columns.
     progress : callable, optional
         ``progress(step, done, total)`` is called before each long step (``step`` names it:

@@ -20,7 +20,8 @@ from ..metrics import (
 )
 from ..plot._intervals import wilson_interval
 from ..plot._style import PALETTE
-from ._svg_charts import Chart, nice_ticks
+from ._svg_axes import nice_ticks
+from ._svg_charts import Chart
 
 __all__ = ["builtin_figures", "reliability_svg", "cost_svg", "decision_curve_svg",
            "prevalence_svg"]

@@ -1,15 +1,18 @@
-"""The numbers of a report, computed with probwrap's array core (no files, no drawing)."""
+"""The numbers of a report, computed with probwrap's array core (no files, no drawing).
+
+:func:`collect_content` routes multiclass and multi-action inputs to :mod:`._general`; the
+binary two-action report is collected here, its decision rules and recommendation in
+:mod:`._binary_rules`.
+"""
 
 from __future__ import annotations
 
-from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
 from ..decision import (
-    capacity_cutoff,
     check_capacity,
     check_cost_matrix,
     cutoff_interval,
@@ -24,8 +27,20 @@ from ..metrics import (
     log_loss,
 )
 from ..plot._common import binary_labels, positive_proba
-from ..plot._cost import cutoff_cost
 from ..shift import PriorEstimator, adjust_to_prior, prior_by_batch, shift_cutoff
+from ._binary_rules import (
+    BAYES_NAME,
+    CHOSEN_NAMES,
+    HALF_NAME,
+    HINDSIGHT_NAME,
+    POLICY_SOURCES,
+    RuleRow,
+    ScaledCosts,
+    cost_scale,
+    recommend,
+    rule_row,
+    target_columns,
+)
 from ._common import (
     MetricRow,
     NoteLog,
@@ -33,28 +48,12 @@ from ._common import (
     Recommendation,
     ReportNote,
     as_positive_proba,
-    as_proba_2d,
-    class_index,
     metric_row,
 )
 from ._fast_metrics import FAST_BOOTSTRAP_ROWS, fast_metric_rows
-from ._general import collect_general_content
+from ._general import general_report
 
 __all__ = ["ReportContent", "MetricRow", "Recommendation", "RuleRow", "collect_content"]
-
-
-@dataclass
-class RuleRow:
-    """One decision rule compared on the labelled rows (and on the unlabelled rows, if any)."""
-
-    key: str
-    label: str
-    cutoff: float | None
-    mean_cost: float
-    flagged_share: float
-    within_capacity: bool | None
-    target_flagged_share: float | None = None
-    target_expected_cost: float | None = None
 
 
 @dataclass
@@ -94,6 +93,7 @@ class ReportContent:
     confidence_level: float = 0.95
     notes: list[ReportNote] = field(default_factory=list)
     recommendation: Recommendation | None = None
+    class_names: tuple[str, str] = ("negative", "positive")
 
 
 def _inner_chain(model: Any) -> list[Any]:
@@ -135,36 +135,50 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes) -> list[Metric
             for key, label, fn, kw, ideal in specs]
 
 
-def _flagged_share(p: np.ndarray, cutoff: float, w: np.ndarray | None) -> float:
-    flag = p > cutoff
-    if w is None:
-        return float(flag.mean())
-    return float(np.dot(w, flag) / w.sum())
+def _is_zero_one(labels: Any) -> bool:
+    plain = [v.item() if hasattr(v, "item") else v for v in labels]
+    return all(isinstance(v, (bool, int, float)) and v in (0, 1) for v in plain)
 
 
-def _rule_cutoff(key: str, cutoff: float | None) -> float:
-    """Cutoff of a rule; "none" acts on no row (cutoff 1), "all" on every row (cutoff -1)."""
-    if cutoff is not None:
-        return cutoff
-    return 1.0 if key == "none" else -1.0
+def _binary_truth(y_true: Any, class_names: Any) -> tuple[np.ndarray, Any]:
+    """0/1 labels and the two original labels ``[negative, positive]``.
+
+    Labels 0/1 (or booleans) have positive class 1. Any other pair must be named, in the order
+    ``(negative, positive)``, by ``class_names``: which class is positive is never guessed from
+    the sort order.
+    """
+    arr = np.asarray(y_true)
+    found = np.unique(arr) if arr.ndim == 1 else None
+    if found is None or found.shape[0] > 2 or _is_zero_one(found):
+        return binary_labels(y_true, name="y_true"), found
+    shown = [str(v.item() if hasattr(v, "item") else v) for v in found]
+    if class_names is not None and len(class_names) == 2 and set(shown) <= {
+            str(c) for c in class_names}:
+        order = [found[shown.index(str(c))] if str(c) in shown else None for c in class_names]
+        return (arr == order[1]).astype(float), [str(c) for c in class_names]
+    pair = " and ".join(repr(v) for v in shown)
+    if class_names is not None:
+        raise ValueError(f"`class_names` {[str(c) for c in class_names]} must name the two labels "
+                         f"of `y_true`, {pair}, in the order (negative, positive).")
+    example = tuple(reversed(shown)) if len(shown) == 2 else ("negative", "positive")
+    raise ValueError(
+        f"`y_true` holds the labels {pair}, not 0/1; say which is the positive class (the class "
+        f"`y_prob` is the probability of) with class_names=(negative, positive), e.g. "
+        f"class_names={example!r}."
+    )
 
 
-#: one name per thing, in the tables, the figure legends and the text
-BAYES_NAME = "Bayes cutoff"
-HALF_NAME = "0.5 cutoff"
-HINDSIGHT_NAME = "least-cost cutoff on these rows (hindsight)"
-CAPACITY_NAME = "capacity cutoff"
-CHOSEN_NAMES = {
-    "tuned": "tuned cutoff",
-    "bayes": "Bayes cutoff of the fitted policy",
-    "fixed": "fixed cutoff",
-    "search": "least-cost cutoff on these rows",
-}
-POLICY_SOURCES = {
-    "tuned": "tuned by the fitted cost policy on held-out (cross-validated) predictions",
-    "bayes": "the Bayes cutoff of the fitted cost policy, from its costs alone",
-    "fixed": "fixed by hand in the fitted cost policy",
-}
+def _binary_class_names(class_names: Any, labels: Any) -> tuple[str, str]:
+    """Display names ``(negative, positive)``: ``class_names``, else the labels unless 0/1."""
+    if class_names is not None:
+        names = [str(c) for c in class_names]
+        if len(names) != 2:
+            raise ValueError(f"`class_names` must name the 2 classes (negative, positive); got "
+                             f"{len(names)}: {names}.")
+        return names[0], names[1]
+    if labels is not None and len(labels) == 2 and not _is_zero_one(labels):
+        return tuple(str(v.item() if hasattr(v, "item") else v) for v in labels)
+    return "negative", "positive"
 
 
 def collect_content(
@@ -202,7 +216,7 @@ def collect_content(
     chain = _inner_chain(model)
     policy = _find(chain, "CostPolicyWrapper")
     calib = _find(chain, "CalibrationWrapper")
-    general = _general_report(
+    general = general_report(
         y_true=y_true, y_prob=y_prob, model=model, X=X, y=y, sample_weight=sample_weight,
         costs=costs, row_costs=row_costs, capacity=capacity, action_names=action_names,
         unlabelled_prob=unlabelled_prob, X_unlabelled=X_unlabelled, prior_shift=prior_shift,
@@ -220,19 +234,21 @@ def collect_content(
             raise ValueError("Give either `model` with `X`, `y`, or `y_true` with `y_prob`.")
         p = positive_proba(model, X, name="model")
         y01 = binary_labels(y, getattr(model, "classes_", None), name="y")
+        labels = getattr(model, "classes_", None)
         if unlabelled_prob is None and X_unlabelled is not None:
             unlabelled_prob = positive_proba(model, X_unlabelled, name="model")
     else:
         if y_true is None or y_prob is None:
             raise ValueError("Give `y_true` and `y_prob` (or a fitted `model` with `X`, `y`).")
         p = as_positive_proba(y_prob, "y_prob")
-        y01 = binary_labels(y_true, name="y_true")
+        y01, labels = _binary_truth(y_true, class_names)
     if y01.shape[0] != p.shape[0]:
         raise ValueError(
             f"`y_true` has {y01.shape[0]} rows but `y_prob` has {p.shape[0]}; they must match."
         )
     if np.unique(y01).shape[0] < 2:
         raise ValueError("The labels must contain both classes to assess calibration.")
+    class_pair = _binary_class_names(class_names, labels)
     w = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
     cap = check_capacity(capacity)
     if costs is not None:
@@ -254,6 +270,7 @@ def collect_content(
         metrics=_metric_rows(y01, p, w, n_bins, n_resamples, confidence_level, rng, notes),
         n_bins=n_bins,
         confidence_level=confidence_level,
+        class_names=class_pair,
     )
     if calib is not None:
         content.calibration_method = str(getattr(calib, "method_", None))
@@ -313,7 +330,7 @@ def collect_content(
         candidates += [("none", f"{content.action_names[0]} for every row", 1.0),
                        ("all", f"{content.action_names[1]} for every row", -1.0)]
         for key, label, c in candidates:
-            content.rules.append(_rule_row(key, label, None if key in ("none", "all") else c,
+            content.rules.append(rule_row(key, label, None if key in ("none", "all") else c,
                                            y01, p, matrix, w, cap))
 
     # -- prevalence ------------------------------------------------------------------------
@@ -361,232 +378,22 @@ def collect_content(
         if 0 < src < 1 and 0 < tgt < 1 and 0 < content.chosen_cutoff < 1:
             content.adapted_cutoff = float(shift_cutoff(content.chosen_cutoff, src, tgt))
             if q is not None and content.cost_matrix is not None:
-                content.rules.insert(1, _rule_row(
+                content.rules.insert(1, rule_row(
                     "adapted", f"{chosen_name}, moved to the estimated prevalence",
                     content.adapted_cutoff, y01, p, content.cost_matrix, w, cap))
                 # every rule acts on the unadjusted probabilities q; its expected cost on the
                 # unlabelled rows uses the posteriors adjusted to the estimated prevalence
                 q_adj = adjust_to_prior(np.column_stack([1.0 - q, q]), [1 - src, src],
                                         [1 - tgt, tgt])
-                E = _ScaledCosts(expected_costs(q_adj, content.cost_matrix / _cost_scale(
-                    content.cost_matrix)), _cost_scale(content.cost_matrix))
+                E = ScaledCosts(expected_costs(q_adj, content.cost_matrix / cost_scale(
+                    content.cost_matrix)), cost_scale(content.cost_matrix))
     if content.cost_matrix is not None:
-        _recommend(content, y01, p, w, q, E, notes)
+        recommend(content, y01, p, w, q, E, notes)
         if E is not None:
             for row in content.rules:
-                _target_columns(row, q, E, cap)
+                target_columns(row, q, E, cap)
     content.notes = notes.notes
     step("done", 4)
     return content
 
 
-def _rule_row(key, label, cutoff, y01, p, matrix, w, cap) -> RuleRow:
-    c = _rule_cutoff(key, cutoff)
-    share = _flagged_share(p, c, w)
-    return RuleRow(key=key, label=label, cutoff=cutoff,
-                   mean_cost=cutoff_cost(y01, p, matrix, c, w), flagged_share=share,
-                   within_capacity=None if cap is None else bool(share <= cap * (1 + 1e-12)))
-
-
-def _cost_scale(matrix: np.ndarray) -> float:
-    """A power of two near the largest cost: dividing by it is exact and keeps sums finite."""
-    top = float(np.max(np.abs(matrix)))
-    return 2.0 ** float(np.floor(np.log2(top))) if top > 0 else 1.0
-
-
-class _ScaledCosts:
-    """Expected costs of the unlabelled rows, held divided by ``scale`` (huge costs)."""
-
-    def __init__(self, values: np.ndarray, scale: float) -> None:
-        self.values, self.scale = values, scale
-
-    def mean_of(self, act: np.ndarray) -> float:
-        """Mean expected cost per row of the given actions, in the original units."""
-        return self.scale * float(self.values[np.arange(act.shape[0]), act].mean())
-
-
-def _target_columns(row: RuleRow, q: np.ndarray, E: _ScaledCosts, cap: float | None) -> None:
-    """Share acted on and expected cost on the unlabelled rows; capacity judged there."""
-    act = (q > _rule_cutoff(row.key, row.cutoff)).astype(np.intp)
-    row.target_flagged_share = float(act.mean())
-    row.target_expected_cost = E.mean_of(act)
-    if cap is not None:
-        row.within_capacity = bool(row.target_flagged_share <= cap * (1 + 1e-12))
-
-
-def _paired_difference(y01, p, w, matrix, c_a, c_b) -> tuple[float, float]:
-    """Mean per-row cost of cutoff ``c_a`` minus that of ``c_b``, and its standard error.
-
-    Weighted mean with Kish's effective sample size for the standard error.
-    """
-    scale = _cost_scale(matrix)
-    cost_a = matrix[y01.astype(np.intp), (p > c_a).astype(np.intp)] / scale
-    cost_b = matrix[y01.astype(np.intp), (p > c_b).astype(np.intp)] / scale
-    d = cost_a - cost_b
-    ww = np.ones_like(d) if w is None else w
-    mean = float(np.average(d, weights=ww))
-    n_eff = ww.sum() ** 2 / np.sum(ww**2)
-    var = float(np.average((d - mean) ** 2, weights=ww))
-    return scale * mean, scale * float(np.sqrt(var / max(n_eff - 1.0, 1.0)))
-
-
-def _recommend(content, y01, p, w, q, E, notes) -> None:
-    """Fill ``content.recommendation``: base rule, prevalence move, capacity (see the docs)."""
-    matrix = content.cost_matrix
-    cap = content.capacity
-    rows = {r.key: r for r in content.rules}
-    chosen = rows["chosen"]
-    key, name, cutoff = "chosen", chosen.label, content.chosen_cutoff
-    reasons: list[str] = []
-    searched_here = "hindsight" not in rows and content.cost_curve is not None and (
-        content.cutoff_source.startswith("the least-cost search"))
-    if content.plugin is not None and abs(content.plugin - content.chosen_cutoff) > 1e-12:
-        diff, se = _paired_difference(y01, p, content.sample_weight, matrix,
-                                      content.chosen_cutoff, content.plugin)
-        said = (f"on the labelled rows the {chosen.label} costs {diff:+.4g} per row against "
-                f"the {BAYES_NAME} (standard error {se:.2g})")
-        if searched_here:
-            if diff < -2 * se:
-                reasons.append(f"{said[0].upper()}{said[1:]}: more than twice its standard "
-                               "error, so it is kept; it was searched on these same rows, so "
-                               "this advantage is optimistic.")
-            else:
-                key, name, cutoff = "plugin", BAYES_NAME, content.plugin
-                reasons.append(f"The {BAYES_NAME} needs no search and {said}: within noise, "
-                               "so the search on these same rows adds nothing reliable.")
-        elif diff > 2 * se:
-            key, name, cutoff = "plugin", BAYES_NAME, content.plugin
-            reasons.append(f"{said[0].upper()}{said[1:]}: more than twice its standard error, "
-                           f"so the {BAYES_NAME} is the better rule on these rows.")
-        else:
-            reasons.append(f"{said[0].upper()}{said[1:]}; the {chosen.label} is kept "
-                           + ("(it also corrects for miscalibration seen on held-out "
-                              "predictions)." if diff <= 0 or diff <= 2 * se else "."))
-    else:
-        reasons.append(f"The {name} is {content.cutoff_source}.")
-    basis = "labelled"
-    base_cutoff = cutoff
-    if q is not None and E is not None and content.shift_pvalue is not None:
-        src, tgt = content.source_prevalence, content.target_prevalence
-        if content.shift_pvalue < 0.01 and 0 < cutoff < 1:
-            cutoff = float(shift_cutoff(cutoff, src, tgt))
-            key = "adapted" if key == "chosen" else key + "_adapted"
-            name = f"{name}, moved to the estimated prevalence"
-            reasons.append(f"The prevalence of the unlabelled rows is estimated at {tgt:.4f} "
-                           f"against {src:.4f} in the labelled rows (shift test p = "
-                           f"{content.shift_pvalue:.2g}), so the cutoff is moved to it "
-                           f"(Saerens et al. 2002): {cutoff:.4f}.")
-            if key not in rows:
-                content.rules.insert(2, _rule_row(key, name, cutoff, y01, p, matrix,
-                                                  content.sample_weight, cap))
-        else:
-            reasons.append("The shift test does not reject an unchanged prevalence at the 1% "
-                           "level, so the cutoff is not moved.")
-        basis = "unlabelled"
-    acting = q if basis == "unlabelled" else p
-    acting_w = None if basis == "unlabelled" else content.sample_weight
-    if cap is not None and _flagged_share(acting, cutoff, acting_w) > cap * (1 + 1e-12):
-        over = _flagged_share(acting, cutoff, acting_w)
-        cap_cut = notes.compute("capacity", "capacity cutoff", capacity_cutoff, acting, cap,
-                                sample_weight=acting_w, score_bounds=(0.0, 1.0))
-        where = "unlabelled" if basis == "unlabelled" else "labelled"
-        reasons.append(f"At {cutoff:.4f} it would act on {100 * over:.1f}% of the {where} rows, "
-                       f"above the capacity of {100 * cap:.1f}%. The {CAPACITY_NAME} "
-                       f"{cap_cut:.4f} acts on the rows with the highest probabilities up to "
-                       "the capacity; with calibrated probabilities no other choice of that "
-                       "many rows has a lower expected cost.")
-        key, name, cutoff = "capacity", CAPACITY_NAME, float(cap_cut)
-        content.rules.insert(2, _rule_row(key, name, cutoff, y01, p, matrix,
-                                          content.sample_weight, cap))
-    if basis == "unlabelled":
-        act = (q > cutoff).astype(np.intp)
-        share = float(act.mean())
-        cost = E.mean_of(act)
-    else:
-        share = _flagged_share(p, cutoff, content.sample_weight)
-        cost = cutoff_cost(y01, p, matrix, cutoff, content.sample_weight)
-    content.recommendation = Recommendation(
-        key=key, name=name, cutoff=cutoff, reasons=reasons, expected_cost=cost,
-        acted_share=share, basis=basis,
-        within_capacity=None if cap is None else bool(share <= cap * (1 + 1e-12)),
-        base_cutoff=base_cutoff,
-    )
-
-
-def _needs_general(k: int, costs: Any, row_costs: Any, policy: Any) -> bool:
-    """Whether the report is beyond binary-with-two-actions (one cutoff)."""
-    if k > 2 or row_costs is not None:
-        return True
-    if costs is not None and not isinstance(costs, Mapping):
-        shape = np.shape(costs)
-        return len(shape) == 2 and shape != (2, 2)
-    if costs is None and policy is not None:
-        return (getattr(policy, "cost_matrix_", None) is None and callable(policy.costs)) or (
-            len(getattr(policy, "actions_", ())) != 2
-        )
-    return False
-
-
-def _general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_costs, capacity,
-                    action_names, unlabelled_prob, X_unlabelled, prior_shift, batch_size,
-                    n_bins, n_resamples, confidence_level, rng, title, policy, calib,
-                    class_names, progress) -> Any:
-    """The multiclass / multi-action content, or None when the binary report applies."""
-    from ..plot._common import class_proba
-
-    if model is not None:
-        if X is None or y is None:
-            return None  # the binary path raises the clear error
-        proba = class_proba(model, X, name="model")
-        k = proba.shape[1]
-        if not _needs_general(k, costs, row_costs, policy):
-            return None
-        if y_prob is not None or y_true is not None:
-            raise ValueError("Give either `model` with `X`, `y`, or `y_true` with `y_prob`.")
-        classes = np.asarray(getattr(model, "classes_", np.arange(k)))
-        y_index = class_index(y, classes, "y")
-        if unlabelled_prob is None and X_unlabelled is not None:
-            unlabelled_prob = class_proba(model, X_unlabelled, name="model")
-    else:
-        if y_true is None or y_prob is None:
-            return None
-        shape = np.shape(y_prob)
-        k = shape[1] if len(shape) == 2 else 2
-        if not _needs_general(k, costs, row_costs, None):
-            return None
-        proba = as_proba_2d(y_prob, "y_prob")
-        y_arr = np.asarray(y_true)
-        if y_arr.ndim != 1:
-            raise ValueError(f"`y_true` must be 1-d; got shape {y_arr.shape}.")
-        if y_arr.shape[0] != proba.shape[0]:
-            raise ValueError(f"`y_true` has {y_arr.shape[0]} rows but `y_prob` has "
-                             f"{proba.shape[0]}; they must match.")
-        found = np.unique(y_arr)
-        if y_arr.dtype.kind in "iu" and found.min() >= 0 and found.max() < k:
-            classes = np.arange(k)
-        elif found.shape[0] == k:
-            classes = found
-        else:
-            raise ValueError(
-                f"`y_true` holds {found.shape[0]} distinct labels but `y_prob` has {k} columns; "
-                f"give labels as column indices 0..{k - 1}, or every class at least once."
-            )
-        y_index = class_index(y_arr, classes, "y_true")
-    if batch_size is not None:
-        raise ValueError("`batch_size` (prevalence by batch) is available for binary reports "
-                         "with two actions only.")
-    q = None if unlabelled_prob is None else as_proba_2d(unlabelled_prob, "unlabelled_prob")
-    if q is not None and q.shape[1] != proba.shape[1]:
-        raise ValueError(f"`unlabelled_prob` has {q.shape[1]} columns but the labelled "
-                         f"probabilities have {proba.shape[1]}.")
-    if class_names is not None and len(class_names) != proba.shape[1]:
-        raise ValueError(f"`class_names` must name the {proba.shape[1]} classes (columns of the "
-                         f"probabilities); got {len(class_names)}.")
-    names = tuple(str(c) for c in (class_names if class_names is not None else classes))
-    return collect_general_content(
-        y_index=y_index, proba=proba, class_names=names, sample_weight=sample_weight,
-        costs=costs, row_costs=row_costs, capacity=capacity, action_names=action_names,
-        policy=policy, calib=calib, X=X, unlabelled_proba=q, X_unlabelled=X_unlabelled,
-        prior_shift=prior_shift, n_bins=n_bins, n_resamples=n_resamples,
-        confidence_level=confidence_level, rng=rng, title=title, progress=progress,
-    )

@@ -2,56 +2,47 @@
 
 The binary two-action report (one cutoff) lives in :mod:`._content`; this module covers the
 rest: more than two classes, more than two actions (a reject / refer / hold action), and
-per-row cost matrices. Everything is computed with probwrap's array core; no files, no drawing.
+per-row cost matrices. It reads the inputs and collects the numbers; the decision rules and the
+recommendation are in :mod:`._general_rules`. Everything is computed with probwrap's array
+core; no files, no drawing.
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
-from ..decision import (
-    bayes_actions,
-    budget_actions,
-    check_capacity,
-    check_cost_matrix,
-    check_row_costs,
-    expected_costs,
-    fit_action_budget,
-    realised_cost,
-)
+from .._validation import power_of_two_unit
+from ..decision import check_cost_matrix, check_row_costs
 from ..metrics import (
     brier_score,
     classwise_calibration_error,
     expected_calibration_error,
     log_loss,
 )
-from ..shift import PriorEstimator, adjust_to_prior
-from ._common import MetricRow, NoteLog, Recommendation, ReportNote, metric_row
+from ..plot._common import class_proba
+from ..shift import PriorEstimator
+from ._common import (
+    MetricRow,
+    NoteLog,
+    Recommendation,
+    ReportNote,
+    as_proba_2d,
+    class_index,
+    metric_row,
+)
+from ._general_rules import (
+    ActionRuleRow,
+    general_rules,
+    general_target_columns,
+    recommend_general,
+    resolve_capacity,
+)
 
 __all__ = ["ActionRuleRow", "MulticlassReportContent", "collect_general_content"]
-
-
-@dataclass
-class ActionRuleRow:
-    """One decision rule over any number of actions, compared on the labelled rows.
-
-    ``shares[j]`` is the (weighted) share of labelled rows given action ``j``;
-    ``mean_cost`` the realised mean cost per row there. The ``target_*`` fields hold the share
-    and the expected cost on the unlabelled rows (posteriors re-weighted to the estimated
-    priors), when those were given.
-    """
-
-    key: str
-    label: str
-    mean_cost: float
-    shares: np.ndarray
-    within_capacity: bool | None = None
-    target_shares: np.ndarray | None = None
-    target_expected_cost: float | None = None
 
 
 @dataclass
@@ -111,31 +102,6 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, seed, notes) -> list[Metri
     ]
     return [metric_row(notes, key, label, fn, y, p, w, ideal, n_resamples, level, seed, **kw)
             for key, label, fn, kw, ideal in specs]
-
-
-def _shares(actions: np.ndarray, n_actions: int, w: np.ndarray | None) -> np.ndarray:
-    counts = np.bincount(actions, weights=w, minlength=n_actions)
-    return counts / counts.sum()
-
-
-def _resolve_capacity(capacity: Any, names: tuple[str, ...]) -> tuple[int, float] | None:
-    if capacity is None:
-        return None
-    if isinstance(capacity, Mapping):
-        if len(capacity) != 1:
-            raise ValueError(f"`capacity` must limit one action, {{action: share}}; got "
-                             f"{dict(capacity)!r}.")
-        ((label, share),) = capacity.items()
-        if str(label) not in names:
-            raise ValueError(f"`capacity` names action {label!r}, which is not among the "
-                             f"actions {list(names)}.")
-        return names.index(str(label)), float(check_capacity(share))
-    if len(names) != 2:
-        raise ValueError(
-            f"`capacity` as a number limits the second of two actions; there are {len(names)} "
-            "actions, so name the limited one: capacity={action: share}."
-        )
-    return 1, float(check_capacity(capacity))
 
 
 def collect_general_content(
@@ -199,10 +165,14 @@ def collect_general_content(
     matrix = None
     per_row = None
     rule_fns: list = []
-    q_costs = None
+    rule_costs = None
     if row_costs is not None:
         per_row = check_row_costs(row_costs, n, n_classes=k, name="row_costs")
-        matrix = np.average(per_row, axis=0, weights=w)
+        # the mean matrix, with costs and weights divided by powers of two (exact) so that
+        # the sums stay finite for costs near the largest float
+        unit = power_of_two_unit(per_row)
+        matrix = unit * np.average(per_row / unit, axis=0,
+                                   weights=None if w is None else w / power_of_two_unit(w))
     elif costs is not None:
         matrix = check_cost_matrix(costs, n_classes=k)
     if matrix is not None:
@@ -229,9 +199,10 @@ def collect_general_content(
         content.per_row_costs = per_row is not None
         if capacity is None and policy is not None:
             capacity = policy.capacity
-        content.capacity = _resolve_capacity(capacity, names)
-        rule_fns, q_costs = _rules(content, proba, y_index, w, matrix, per_row, policy,
-                                   policy_costs, X, unlabelled_proba, X_unlabelled)
+        content.capacity = resolve_capacity(capacity, names)
+        rule_fns, rule_costs = general_rules(content, proba, y_index, w, matrix, per_row,
+                                             policy, policy_costs, X, unlabelled_proba,
+                                             X_unlabelled)
     elif capacity is not None:
         raise ValueError("`capacity` needs costs (`costs` or `row_costs`).")
 
@@ -260,186 +231,88 @@ def collect_general_content(
         content.shift_pvalue = float(res.shift_pvalue)
     if (content.target_prior is not None and q is not None and matrix is not None
             and np.all(content.source_prior > 0) and np.all(content.target_prior > 0)):
-        _target_columns(content, proba, y_index, w, matrix, per_row, q, rule_fns, q_costs,
-                        X_unlabelled, policy is not None)
+        general_target_columns(content, proba, y_index, w, rule_costs, q, rule_fns,
+                               X_unlabelled, policy is not None)
     if content.rules:
-        _recommend_general(content, proba, q, q_costs, notes)
+        recommend_general(content, proba, y_index, w, rule_costs, q, notes)
     content.notes = notes.notes
     step("done", 4)
     return content
 
 
-def _rules(content, proba, y_index, w, matrix, per_row, policy, policy_costs, X, q,
-           X_unlabelled) -> tuple[list, Any]:
-    """Fill ``content.rules`` with the chosen rule and its alternatives.
+def _needs_general(k: int, costs: Any, row_costs: Any, policy: Any) -> bool:
+    """Whether the report is beyond binary-with-two-actions (one cutoff)."""
+    if k > 2 or row_costs is not None:
+        return True
+    if costs is not None and not isinstance(costs, Mapping):
+        shape = np.shape(costs)
+        return len(shape) == 2 and shape != (2, 2)
+    if costs is None and policy is not None:
+        return (getattr(policy, "cost_matrix_", None) is None and callable(policy.costs)) or (
+            len(getattr(policy, "actions_", ())) != 2
+        )
+    return False
 
-    Returns the rule functions (to apply them to unlabelled rows) and the costs of the
-    unlabelled rows (None when they are per row and unknown there).
-    """
-    k, n_act = matrix.shape
-    names = content.action_names
-    costs_l = matrix if per_row is None else per_row
-    q_costs = None
-    if q is not None:
-        if per_row is None:
-            q_costs = matrix
-        elif policy_costs is not None and X_unlabelled is not None:
-            q_costs = check_row_costs(policy_costs(X_unlabelled), q.shape[0], n_classes=k,
-                                      n_actions=n_act, name="costs(X_unlabelled)")
-    # each rule: (key, label, actions on labelled rows, actions on unlabelled rows or None)
-    specs: list[tuple[str, str, Callable[..., np.ndarray]]] = []
-    cap = content.capacity
-    budget = None
-    if cap is not None:
-        budget = fit_action_budget(expected_costs(proba, costs_l), cap[0], cap[1],
-                                   sample_weight=w)
 
-    def bayes(p, c):
-        return bayes_actions(p, c)
+def general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_costs, capacity,
+                    action_names, unlabelled_prob, X_unlabelled, prior_shift, batch_size,
+                    n_bins, n_resamples, confidence_level, rng, title, policy, calib,
+                    class_names, progress) -> Any:
+    """The multiclass / multi-action content, or None when the binary report applies."""
 
-    def bayes_budget(p, c):
-        return budget_actions(expected_costs(p, c), budget.action, budget.saving_threshold)
-
-    if policy is not None:
-        index = {str(a): j for j, a in enumerate(policy.actions_)}
-
-        def chosen(p, c, _rows=None):
-            acts = policy.predict(_rows)
-            return np.array([index[str(a)] for a in acts], dtype=np.intp)
-
-        content.rule_source = (
-            "the fitted cost policy ("
-            + ("class offsets tuned on held-out predictions" if policy.strategy == "tuned"
-               else "least expected cost" if policy.strategy == "bayes" else "fixed rule")
-            + (", within its capacity)" if policy.capacity is not None else ")"))
-        offsets = getattr(policy, "class_offsets_", None)
-        content.class_offsets = None if offsets is None else np.asarray(offsets, dtype=float)
-        b = getattr(policy, "action_budget_", None)
-        content.budget_threshold = None if b is None else float(b.saving_threshold)
-        specs.append(("chosen", "the fitted cost policy", chosen))
-        if budget is not None:
-            specs.append(("bayes_capacity", "Bayes actions within capacity (filled on these rows)",
-                          bayes_budget))
-        specs.append(("bayes", "Bayes actions (least expected cost)", bayes))
-    elif budget is not None:
-        content.rule_source = "the Bayes rule filled within capacity on the rows of this report"
-        content.budget_threshold = float(budget.saving_threshold)
-        specs.append(("chosen", "Bayes actions within capacity", bayes_budget))
-        specs.append(("bayes", "Bayes actions without the capacity limit", bayes))
+    if model is not None:
+        if X is None or y is None:
+            return None  # the binary path raises the clear error
+        proba = class_proba(model, X, name="model")
+        k = proba.shape[1]
+        if not _needs_general(k, costs, row_costs, policy):
+            return None
+        if y_prob is not None or y_true is not None:
+            raise ValueError("Give either `model` with `X`, `y`, or `y_true` with `y_prob`.")
+        classes = np.asarray(getattr(model, "classes_", np.arange(k)))
+        y_index = class_index(y, classes, "y")
+        if unlabelled_prob is None and X_unlabelled is not None:
+            unlabelled_prob = class_proba(model, X_unlabelled, name="model")
     else:
-        content.rule_source = "the Bayes rule (least expected cost) on the given probabilities"
-        specs.append(("chosen", "Bayes actions (least expected cost)", bayes))
-
-    if n_act == k and tuple(names) == tuple(content.class_names):
-        specs.append(("argmax", "most probable class as the action",
-                      lambda p, c: np.argmax(p, axis=1)))
-
-    def as_if_certain(p, c):
-        top = np.argmax(p, axis=1)
-        if c.ndim == 2:
-            return np.argmin(c[top], axis=1)
-        return np.argmin(c[np.arange(top.shape[0]), top], axis=1)
-
-    specs.append(("certain", "best action as if the most probable class were certain",
-                  as_if_certain))
-    for j, name in enumerate(names):
-        specs.append((f"all:{j}", f"{name} for every row",
-                      lambda p, c, j=j: np.full(p.shape[0], j, dtype=np.intp)))
-
-    yk = np.arange(k)
-    ak = np.arange(n_act)
-    fns = []
-    for key, label, fn in specs:
-        if key == "chosen" and policy is not None:
-            acts = fn(proba, costs_l, X)
+        if y_true is None or y_prob is None:
+            return None
+        shape = np.shape(y_prob)
+        k = shape[1] if len(shape) == 2 else 2
+        if not _needs_general(k, costs, row_costs, None):
+            return None
+        proba = as_proba_2d(y_prob, "y_prob")
+        y_arr = np.asarray(y_true)
+        if y_arr.ndim != 1:
+            raise ValueError(f"`y_true` must be 1-d; got shape {y_arr.shape}.")
+        if y_arr.shape[0] != proba.shape[0]:
+            raise ValueError(f"`y_true` has {y_arr.shape[0]} rows but `y_prob` has "
+                             f"{proba.shape[0]}; they must match.")
+        found = np.unique(y_arr)
+        if y_arr.dtype.kind in "iu" and found.min() >= 0 and found.max() < k:
+            classes = np.arange(k)
+        elif found.shape[0] == k:
+            classes = found
         else:
-            acts = fn(proba, costs_l)
-        cost = realised_cost(y_index, acts, costs=matrix, classes=yk, actions=ak,
-                             row_costs=per_row, sample_weight=w)
-        shares = _shares(acts, n_act, w)
-        within = None if cap is None else bool(shares[cap[0]] <= cap[1] * (1 + 1e-12))
-        content.rules.append(ActionRuleRow(key, label, cost, shares, within))
-        fns.append((key, fn))
-    return fns, q_costs
-
-
-def _target_columns(content, proba, y_index, w, matrix, per_row, q, rule_fns, q_costs,
-                    X_unlabelled, has_policy) -> None:
-    """Share of each action and expected cost on the unlabelled rows, for every rule.
-
-    Every rule acts on the unadjusted probabilities ``q``; its expected cost there uses the
-    posteriors re-weighted to the estimated priors (Saerens et al. 2002, eq. 2.4).
-    """
-    if q_costs is None:
-        return
-    src, tgt = content.source_prior, content.target_prior
-    q_adj = adjust_to_prior(q, src, tgt)
-    E = expected_costs(q_adj, q_costs)
-    n_act = matrix.shape[1]
-    rows = np.arange(q.shape[0])
-    for row, (key, fn) in zip(content.rules, rule_fns, strict=True):
-        if key == "chosen" and has_policy:
-            if X_unlabelled is None:
-                continue
-            acts = fn(q, q_costs, X_unlabelled)
-        else:
-            acts = fn(q, q_costs)
-        row.target_shares = _shares(acts, n_act, None)
-        row.target_expected_cost = float(E[rows, acts].mean())
-    # the Bayes rule moved to the estimated priors, on both sets of rows
-    costs_l = matrix if per_row is None else per_row
-    acts_l = bayes_actions(adjust_to_prior(proba, src, tgt), costs_l)
-    acts_q = np.argmin(E, axis=1)
-    cap = content.capacity
-    shares = _shares(acts_l, n_act, w)
-    content.rules.insert(1, ActionRuleRow(
-        key="adapted", label="Bayes actions with the probabilities moved to the new priors",
-        mean_cost=realised_cost(y_index, acts_l, costs=matrix, classes=np.arange(len(src)),
-                                actions=np.arange(n_act), row_costs=per_row,
-                                sample_weight=w),
-        shares=shares,
-        within_capacity=None if cap is None else bool(shares[cap[0]] <= cap[1] * (1 + 1e-12)),
-        target_shares=_shares(acts_q, n_act, None),
-        target_expected_cost=float(E[rows, acts_q].mean()),
-    ))
-
-
-def _recommend_general(content, proba, q, q_costs, notes) -> None:
-    """The rule to use now: the rule in use, or the Bayes actions moved to the new priors when
-    the class shares have moved; filled within the capacity on the rows it will act on."""
-    rows = {r.key: r for r in content.rules}
-    row = rows["chosen"]
-    reasons = [f"The rule in use is {content.rule_source}."]
-    basis = "labelled"
-    if "adapted" in rows and content.shift_pvalue is not None and content.shift_pvalue < 0.01:
-        row = rows["adapted"]
-        reasons.append(f"The class shares of the unlabelled rows have moved (shift test p = "
-                       f"{content.shift_pvalue:.2g}), so the probabilities are moved to the "
-                       "estimated shares before the least expected cost action is taken "
-                       "(Saerens et al. 2002).")
-    elif content.shift_pvalue is not None:
-        reasons.append("The shift test does not reject unchanged class shares at the 1% level.")
-    shares = row.shares
-    cost = row.mean_cost
-    if row.target_shares is not None:
-        basis = "unlabelled"
-        shares, cost = row.target_shares, row.target_expected_cost
-    within = None
-    if content.capacity is not None:
-        j, cap = content.capacity
-        within = bool(shares[j] <= cap * (1 + 1e-12))
-        if not within:
-            reasons.append(
-                f"It gives “{content.action_names[j]}” to {100 * shares[j]:.1f}% of "
-                f"the {basis} rows, above the capacity of {100 * cap:.1f}%: fill that action "
-                "up to the capacity with the rows it saves most on, e.g. the row "
-                f"“{rows['bayes_capacity'].label}”." if "bayes_capacity" in rows
-                else f"It gives “{content.action_names[j]}” to "
-                f"{100 * shares[j]:.1f}% of the {basis} rows, above the capacity of "
-                f"{100 * cap:.1f}%: fill that action up to the capacity with the rows it saves "
-                "most on instead.")
-    content.recommendation = Recommendation(
-        key=row.key, name=row.label, cutoff=None, reasons=reasons,
-        expected_cost=float(cost), acted_share=float(1.0 - shares[0]), basis=basis,
-        within_capacity=within, action_shares=np.asarray(shares, dtype=float),
+            raise ValueError(
+                f"`y_true` holds {found.shape[0]} distinct labels but `y_prob` has {k} columns; "
+                f"give labels as column indices 0..{k - 1}, or every class at least once."
+            )
+        y_index = class_index(y_arr, classes, "y_true")
+    if batch_size is not None:
+        raise ValueError("`batch_size` (prevalence by batch) is available for binary reports "
+                         "with two actions only.")
+    q = None if unlabelled_prob is None else as_proba_2d(unlabelled_prob, "unlabelled_prob")
+    if q is not None and q.shape[1] != proba.shape[1]:
+        raise ValueError(f"`unlabelled_prob` has {q.shape[1]} columns but the labelled "
+                         f"probabilities have {proba.shape[1]}.")
+    if class_names is not None and len(class_names) != proba.shape[1]:
+        raise ValueError(f"`class_names` must name the {proba.shape[1]} classes (columns of the "
+                         f"probabilities); got {len(class_names)}.")
+    names = tuple(str(c) for c in (class_names if class_names is not None else classes))
+    return collect_general_content(
+        y_index=y_index, proba=proba, class_names=names, sample_weight=sample_weight,
+        costs=costs, row_costs=row_costs, capacity=capacity, action_names=action_names,
+        policy=policy, calib=calib, X=X, unlabelled_proba=q, X_unlabelled=X_unlabelled,
+        prior_shift=prior_shift, n_bins=n_bins, n_resamples=n_resamples,
+        confidence_level=confidence_level, rng=rng, title=title, progress=progress,
     )

@@ -135,7 +135,8 @@ def _decisions(c: MulticlassReportContent, figures: dict[str, str]) -> str:
     share_head = "".join(f"<th>share {_text(a)}</th>" for a in c.action_names)
     head = (
         f"<tr><th>rule</th><th>mean cost per row</th>{share_head}"
-        + ("<th>within capacity</th>" if c.capacity is not None else "")
+        + (("<th>within capacity (unlabelled rows)</th>" if target else
+             "<th>within capacity</th>") if c.capacity is not None else "")
         + ("<th>expected cost (unlabelled)</th>" if target else "")
         + "</tr>"
     )

@@ -90,13 +90,23 @@ footer { text-align:center; font-size:.75rem; color:#6b7480; padding:1rem; }
 """
 
 
+def _class_pair(c: ReportContent) -> tuple[str, str]:
+    """The two class names, escaped and quoted, as the report's text names them."""
+    names = getattr(c, "class_names", ("negative", "positive"))
+    return tuple(f"&ldquo;{_text(n)}&rdquo;" for n in names)  # type: ignore[return-value]
+
+
+def _positive(c: ReportContent) -> str:
+    return _class_pair(c)[1]
+
+
 def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
     level = f"{c.confidence_level:.0%}"
     rows = metric_rows_html(c)
     parts = [
         '<section id="calibration"><h2><span class="pw-num">1</span>Calibration</h2>',
         f"<p>Measured on {c.n_rows} labelled rows with an observed prevalence of "
-        f"{c.prevalence:.4f}. Intervals are {level} bootstrap percentile intervals "
+        f"{c.prevalence:.4f} (share of {_positive(c)}). Intervals are {level} bootstrap percentile intervals "
         "(rows resampled with replacement).</p>",
         '<table id="calibration-metrics"><thead><tr><th>metric</th><th>value</th>'
         f"<th>{level} low</th><th>{level} high</th><th>ideal</th></tr></thead>"
@@ -137,11 +147,13 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
     else:
         m = c.cost_matrix
         a0, a1 = (_text(a) for a in c.action_names)
+        neg, pos = _class_pair(c)
         parts.append(
             '<table id="cost-matrix"><thead><tr><th>true class</th>'
             f"<th>{a0}</th><th>{a1}</th></tr></thead><tbody>"
-            f"<tr><td>negative</td>{_num(m[0, 0], 2)}{_num(m[0, 1], 2)}</tr>"
-            f"<tr><td>positive</td>{_num(m[1, 0], 2)}{_num(m[1, 1], 2)}</tr></tbody></table>"
+            f'<tr data-class="negative"><td>{neg}</td>{_num(m[0, 0], 2)}{_num(m[0, 1], 2)}</tr>'
+            f'<tr data-class="positive"><td>{pos}</td>{_num(m[1, 0], 2)}{_num(m[1, 1], 2)}</tr>'
+            "</tbody></table>"
         )
         cap = (
             f"at most {100 * c.capacity:.1f}% of rows may receive &ldquo;{a1}&rdquo;"
@@ -229,7 +241,8 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
     if c.target_prevalence is None:
         parts.append(
             "<p>No unlabelled rows were given, so the prevalence of the deployment data was not "
-            f"estimated. The labelled rows have prevalence {c.prevalence:.4f}.</p>"
+            f"estimated. The labelled rows have prevalence {c.prevalence:.4f} (share of "
+            f"{_positive(c)}).</p>"
         )
     else:
         iv = c.target_interval
@@ -263,8 +276,9 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
             "The test does not reject &ldquo;no shift&rdquo; at the 1% level."
         )
         parts.append(
-            f"<p>Estimated from {c.n_unlabelled or 'the'} unlabelled rows, assuming only the "
-            f"class shares changed (prior shift). {verdict}</p>"
+            f"<p>Prevalence is the share of {_positive(c)}, estimated from "
+            f"{c.n_unlabelled or 'the'} unlabelled rows, assuming only the class shares of "
+            f"{_positive(c)} and {_class_pair(c)[0]} changed (prior shift). {verdict}</p>"
         )
         parts.append(notes_box(
             [n for n in c.notes if n.key in ("prevalence", "batches")], "notes-prevalence"))
@@ -292,13 +306,15 @@ def _glance(c: Any) -> str:
         items = general_glance(c)
         li = "".join(f"<li>{_text(k)}<b>{_text(v)}</b></li>" for k, v in items)
         return f'<ul class="pw-glance" id="glance">{li}</ul>'
-    items = [("labelled rows", f"{c.n_rows}"), ("observed prevalence", f"{c.prevalence:.4f}")]
+    positive = c.class_names[1]
+    items = [("labelled rows", f"{c.n_rows}"),
+             (f"observed prevalence ({positive})", f"{c.prevalence:.4f}")]
     if c.recommendation is not None and c.recommendation.cutoff is not None:
         items.append(("recommended cutoff", f"{c.recommendation.cutoff:.4f}"))
     elif c.chosen_cutoff is not None:
         items.append((c.chosen_name, f"{c.chosen_cutoff:.4f}"))
     if c.target_prevalence is not None:
-        items.append(("estimated new prevalence", f"{c.target_prevalence:.4f}"))
+        items.append((f"estimated new prevalence ({positive})", f"{c.target_prevalence:.4f}"))
     li = "".join(f"<li>{_text(k)}<b>{_text(v)}</b></li>" for k, v in items)
     return f'<ul class="pw-glance" id="glance">{li}</ul>'
 

@@ -1,0 +1,124 @@
+"""Writing the command line's output files: early checks that a path can be written, and
+atomic writes (the complete new file or the untouched old one)."""
+
+from __future__ import annotations
+
+import argparse
+import contextlib
+import os
+import tempfile
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+from ._common import TABLE_SUFFIXES, DataError, one_line, require, table_kind
+
+__all__ = ["check_out_suffix", "check_writable", "write_atomic", "write_text", "write_table"]
+
+
+def check_out_suffix(
+    parser: argparse.ArgumentParser, out: str, suffixes: tuple[str, ...], flag: str = "--out"
+) -> None:
+    """A usage error (exit 2) unless ``out`` ends with one of ``suffixes``."""
+    if Path(out).suffix.lower() not in suffixes:
+        parser.error(
+            f"{flag} {out}: unsupported file type {Path(out).suffix or '(none)'!s}; use one of "
+            f"{', '.join(suffixes)}"
+        )
+
+
+def _prepare_folder(path: Path) -> None:
+    if path.is_dir():
+        raise DataError(f"{path}: is a folder; give a file name")
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise DataError(
+            f"{path}: the folder {path.parent} cannot be created ({exc.strerror or exc})"
+        ) from None
+
+
+def check_writable(path: str | Path, *, folder: bool = False) -> None:
+    """Fail early (before any long computation) when ``path`` cannot be written.
+
+    ``folder=True``: ``path`` is a folder to write into (created when missing).
+    """
+    path = Path(path)
+    if folder:
+        if path.exists() and not path.is_dir():
+            raise DataError(f"{path}: is a file; --out names a folder")
+        target_dir = path
+    else:
+        if path.is_dir():
+            raise DataError(f"{path}: is a folder; give a file name")
+        target_dir = path.parent
+    try:
+        target_dir.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise DataError(
+            f"{path}: the folder {target_dir} cannot be created ({exc.strerror or exc})"
+        ) from None
+    if not os.access(target_dir, os.W_OK | os.X_OK):
+        raise DataError(f"{path}: cannot be written (the folder {target_dir} is read-only)")
+
+
+def write_atomic(path: str | Path, write: Callable[[Path], None]) -> None:
+    """Write a file so that it is either the complete new file or the untouched old one.
+
+    ``write(tmp)`` writes the content to a temporary file in the same folder; it is flushed
+    and fsynced, then moved over ``path`` with :func:`os.replace` (atomic on POSIX and
+    Windows). An error or an interruption (Ctrl-C, SIGTERM, a full disk) removes the
+    temporary file and leaves any previous ``path`` as it was; of two runs writing the same
+    path, the last to finish wins with its whole file. Missing parent folders are created.
+    """
+    path = Path(path)
+    _prepare_folder(path)
+    try:
+        fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    except OSError as exc:
+        raise DataError(f"{path}: cannot be written ({exc.strerror or exc})") from None
+    os.close(fd)
+    tmp = Path(tmp_name)
+    try:
+        try:
+            mode = path.stat().st_mode & 0o7777 if path.exists() else None
+        except OSError:
+            mode = None
+        if mode is None:
+            umask = os.umask(0)
+            os.umask(umask)
+            mode = 0o666 & ~umask
+        write(tmp)
+        with open(tmp, "rb+") as handle:
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.chmod(tmp, mode)
+        os.replace(tmp, path)
+    except OSError as exc:
+        raise DataError(f"{path}: cannot be written ({exc.strerror or one_line(exc)})") from None
+    finally:
+        with contextlib.suppress(OSError):
+            tmp.unlink()
+    with contextlib.suppress(OSError, AttributeError):
+        dir_fd = os.open(path.parent, os.O_RDONLY)
+        try:
+            os.fsync(dir_fd)
+        finally:
+            os.close(dir_fd)
+
+
+def write_text(path: str | Path, text: str) -> None:
+    """Write UTF-8 text atomically (see :func:`write_atomic`)."""
+    write_atomic(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
+
+
+def write_table(frame: Any, path: str | Path) -> None:
+    """Write a DataFrame atomically, as Parquet (``.parquet``/``.pq``) or CSV (``.csv``)."""
+    path = Path(path)
+    if path.suffix.lower() not in TABLE_SUFFIXES:
+        raise DataError(f"{path}: unsupported file type; use one of {', '.join(TABLE_SUFFIXES)}")
+    if table_kind(path) == "Parquet":
+        require("pyarrow")
+        write_atomic(path, lambda tmp: frame.to_parquet(tmp, index=False))
+    else:
+        write_atomic(path, lambda tmp: frame.to_csv(tmp, index=False))

@@ -1,0 +1,192 @@
+"""Reading the command line's input tables: CSV or Parquet files, numeric and probability
+columns read exactly, and binary labels with an explicit positive class.
+
+Every problem is a :class:`~._common.DataError` naming the file, the column and the first bad
+row.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ._common import DataError, clean, one_line, require, shown, table_kind
+
+__all__ = ["read_table", "no_column", "numeric_column", "probability_column", "read_labels"]
+
+
+def read_table(path: str | Path, *, exact: Iterable[str] = ()) -> Any:
+    """Read a CSV or Parquet file into a pandas DataFrame (Parquet by extension; CSV otherwise).
+
+    The columns named in ``exact`` are read from CSV as text, so :func:`numeric_column` turns
+    them into floats with a correctly rounded parser (a number written at full precision reads
+    back as the same float, in every pandas version).
+    """
+    pd = require("pandas")
+    path = Path(path)
+    if not path.exists():
+        raise DataError(f"{path}: file not found")
+    if path.is_dir():
+        raise DataError(f"{path}: is a folder, not a file")
+    if table_kind(path) == "Parquet":
+        require("pyarrow")
+    try:
+        if table_kind(path) == "Parquet":
+            frame = pd.read_parquet(path)
+        else:
+            frame = pd.read_csv(path, dtype=dict.fromkeys(exact, str))
+    except pd.errors.EmptyDataError:
+        raise DataError(f"{path}: the file is empty") from None
+    except (MemoryError, KeyboardInterrupt):
+        raise
+    except Exception as exc:  # parsing errors of any kind: report, do not trace back
+        raise DataError(f"{path}: cannot be read as {table_kind(path)} ({one_line(exc)})") from None
+    if frame.shape[0] == 0:
+        raise DataError(f"{path}: the file has a header but no rows")
+    return frame
+
+
+def _columns_listed(frame: Any) -> str:
+    names = [shown(str(c)) for c in frame.columns[:10]]
+    more = ", ..." if frame.shape[1] > 10 else ""
+    return ", ".join(names) + more
+
+
+def no_column(frame: Any, column: str, path: str | Path, flag: str) -> DataError:
+    """The error for a column that is not in the file."""
+    return DataError(
+        f"{path}: no column {shown(column)} (given by {flag}); the file has columns "
+        f"{_columns_listed(frame)}"
+    )
+
+
+def _row(path: str | Path, column: str, row: int) -> str:
+    return f"{path}: column {shown(column)}, row {row + 2} (counting the header as row 1)"
+
+
+def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str) -> np.ndarray:
+    """One column as finite floats, or a DataError naming the file, column and first bad row.
+
+    Text is converted with NumPy's correctly rounded parser (every float written with enough
+    digits reads back exactly).
+    """
+    pd = require("pandas")
+    if column not in frame.columns:
+        raise no_column(frame, column, path, flag)
+    series = frame[column]
+    if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(
+        series.dtype
+    ):
+        values = series.to_numpy(dtype=float, na_value=np.nan)
+    else:
+        raw = series.to_numpy(dtype=object)
+        try:
+            values = np.array(
+                ["nan" if v is None or v is pd.NA or (isinstance(v, float) and v != v) else v
+                 for v in raw], dtype=str,
+            ).astype(float)
+        except ValueError:
+            values = np.array(
+                pd.to_numeric(series, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+            )
+            # text pandas cannot parse is already NaN; make sure nothing unparsed passes
+            for i in np.flatnonzero(np.isfinite(values)):
+                try:
+                    values[i] = float(str(raw[i]))
+                except ValueError:
+                    values[i] = np.nan
+    bad = ~np.isfinite(values)
+    if bad.any():
+        row = int(np.flatnonzero(bad)[0])
+        raw_value = series.iloc[row]
+        what = "the value is missing" if pd.isna(raw_value) else (
+            f"{shown(raw_value)} is not a finite number"
+        )
+        raise DataError(f"{_row(path, column, row)}: {what}")
+    return values
+
+
+def probability_column(frame: Any, column: str, path: str | Path, *, flag: str) -> np.ndarray:
+    """A column of probabilities in [0, 1], or a DataError naming the first bad row."""
+    values = numeric_column(frame, column, path, flag=flag)
+    bad = (values < 0.0) | (values > 1.0)
+    if bad.any():
+        row = int(np.flatnonzero(bad)[0])
+        raise DataError(
+            f"{_row(path, column, row)}: {shown(values[row])} is not a probability in [0, 1] "
+            "(use --scale log-odds for log-odds scores)"
+        )
+    return values
+
+
+def _number(value: Any) -> float | None:
+    if isinstance(value, bool | np.bool_):
+        return float(value)
+    try:
+        out = float(value)
+    except (TypeError, ValueError):
+        return None
+    return out if np.isfinite(out) else None
+
+
+def read_labels(
+    frame: Any, column: str, path: str | Path, *, positive: str | None = None,
+    flag: str = "--label-column",
+) -> tuple[np.ndarray, list[Any]]:
+    """Binary labels as 0/1 and the two original labels ``[negative, positive]``.
+
+    Labels 0/1 (as numbers or text) and booleans have the positive class 1 / True unless
+    ``positive`` says otherwise. Any other pair of labels (text such as ``damaged``/``intact``,
+    or numbers such as 1/2) needs ``positive`` (the ``--positive-label`` option): which class
+    is "positive" is never guessed from the sort order.
+    """
+    pd = require("pandas")
+    if column not in frame.columns:
+        raise no_column(frame, column, path, flag)
+    series = frame[column]
+    missing = series.isna().to_numpy()
+    if missing.any():
+        row = int(np.flatnonzero(missing)[0])
+        raise DataError(f"{_row(path, column, row)}: the label is missing")
+    if pd.api.types.is_numeric_dtype(series.dtype) or pd.api.types.is_bool_dtype(series.dtype):
+        values = series.to_numpy()
+    else:
+        values = series.astype(str).to_numpy(dtype=object)
+    distinct = pd.unique(values)
+    if distinct.shape[0] != 2:
+        shown_labels = ", ".join(shown(v) for v in distinct[:6])
+        more = ", ..." if distinct.shape[0] > 6 else ""
+        raise DataError(
+            f"{path}: column {shown(column)} must hold exactly two labels (binary outcome); it "
+            f"holds {distinct.shape[0]}: {shown_labels}{more}"
+        )
+    numbers = [_number(v) for v in distinct]
+    zero_one = sorted(n for n in numbers if n is not None) == [0.0, 1.0]
+    if positive is not None:
+        matches = [
+            i for i, v in enumerate(distinct)
+            if str(v) == positive or (numbers[i] is not None and _number(positive) == numbers[i])
+        ]
+        if len(matches) != 1:
+            raise DataError(
+                f"{path}: column {shown(column)} has no label {shown(positive)} (given by "
+                f"--positive-label); its labels are {shown(distinct[0])} and {shown(distinct[1])}"
+            )
+        pos_index = matches[0]
+    elif zero_one:
+        pos_index = numbers.index(1.0)
+    else:
+        a, b = sorted(str(v) for v in distinct)
+        raise DataError(
+            f"{path}: column {shown(column)} holds the labels {shown(a)} and {shown(b)}, not 0/1; "
+            f"say which one is the positive class (the class the scores are the probability of) "
+            f"with --positive-label {clean(a)} or --positive-label {clean(b)}"
+        )
+    pos = distinct[pos_index]
+    neg = distinct[1 - pos_index]
+    y = (values == pos).astype(np.intp)
+    plain = [v.item() if hasattr(v, "item") else v for v in (neg, pos)]
+    return y, plain

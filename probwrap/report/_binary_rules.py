@@ -1,0 +1,197 @@
+"""The decision rules of the binary two-action report, compared on the labelled rows (and on
+the unlabelled rows, if any), and the recommendation drawn from them: the rule to use now, why,
+its expected cost and the share acted on, within the capacity at the estimated prevalence."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..decision import capacity_cutoff
+from ..plot._cost import cutoff_cost
+from ..shift import shift_cutoff
+from ._common import Recommendation
+
+__all__ = ["RuleRow", "BAYES_NAME", "HALF_NAME", "HINDSIGHT_NAME", "CAPACITY_NAME",
+           "CHOSEN_NAMES", "POLICY_SOURCES", "rule_row", "cost_scale", "ScaledCosts",
+           "target_columns", "recommend", "flagged_share"]
+
+
+@dataclass
+class RuleRow:
+    """One decision rule compared on the labelled rows (and on the unlabelled rows, if any)."""
+
+    key: str
+    label: str
+    cutoff: float | None
+    mean_cost: float
+    flagged_share: float
+    within_capacity: bool | None
+    target_flagged_share: float | None = None
+    target_expected_cost: float | None = None
+
+
+#: one name per thing, in the tables, the figure legends and the text
+BAYES_NAME = "Bayes cutoff"
+HALF_NAME = "0.5 cutoff"
+HINDSIGHT_NAME = "least-cost cutoff on these rows (hindsight)"
+CAPACITY_NAME = "capacity cutoff"
+CHOSEN_NAMES = {
+    "tuned": "tuned cutoff",
+    "bayes": "Bayes cutoff of the fitted policy",
+    "fixed": "fixed cutoff",
+    "search": "least-cost cutoff on these rows",
+}
+POLICY_SOURCES = {
+    "tuned": "tuned by the fitted cost policy on held-out (cross-validated) predictions",
+    "bayes": "the Bayes cutoff of the fitted cost policy, from its costs alone",
+    "fixed": "fixed by hand in the fitted cost policy",
+}
+
+
+def flagged_share(p: np.ndarray, cutoff: float, w: np.ndarray | None) -> float:
+    flag = p > cutoff
+    if w is None:
+        return float(flag.mean())
+    return float(np.dot(w, flag) / w.sum())
+
+
+def _rule_cutoff(key: str, cutoff: float | None) -> float:
+    """Cutoff of a rule; "none" acts on no row (cutoff 1), "all" on every row (cutoff -1)."""
+    if cutoff is not None:
+        return cutoff
+    return 1.0 if key == "none" else -1.0
+
+
+def rule_row(key, label, cutoff, y01, p, matrix, w, cap) -> RuleRow:
+    c = _rule_cutoff(key, cutoff)
+    share = flagged_share(p, c, w)
+    return RuleRow(key=key, label=label, cutoff=cutoff,
+                   mean_cost=cutoff_cost(y01, p, matrix, c, w), flagged_share=share,
+                   within_capacity=None if cap is None else bool(share <= cap * (1 + 1e-12)))
+
+
+def cost_scale(matrix: np.ndarray) -> float:
+    """A power of two near the largest cost: dividing by it is exact and keeps sums finite."""
+    top = float(np.max(np.abs(matrix)))
+    return 2.0 ** float(np.floor(np.log2(top))) if top > 0 else 1.0
+
+
+class ScaledCosts:
+    """Expected costs of the unlabelled rows, held divided by ``scale`` (huge costs)."""
+
+    def __init__(self, values: np.ndarray, scale: float) -> None:
+        self.values, self.scale = values, scale
+
+    def mean_of(self, act: np.ndarray) -> float:
+        """Mean expected cost per row of the given actions, in the original units."""
+        return self.scale * float(self.values[np.arange(act.shape[0]), act].mean())
+
+
+def target_columns(row: RuleRow, q: np.ndarray, E: ScaledCosts, cap: float | None) -> None:
+    """Share acted on and expected cost on the unlabelled rows; capacity judged there."""
+    act = (q > _rule_cutoff(row.key, row.cutoff)).astype(np.intp)
+    row.target_flagged_share = float(act.mean())
+    row.target_expected_cost = E.mean_of(act)
+    if cap is not None:
+        row.within_capacity = bool(row.target_flagged_share <= cap * (1 + 1e-12))
+
+
+def _paired_difference(y01, p, w, matrix, c_a, c_b) -> tuple[float, float]:
+    """Mean per-row cost of cutoff ``c_a`` minus that of ``c_b``, and its standard error.
+
+    Weighted mean with Kish's effective sample size for the standard error.
+    """
+    scale = cost_scale(matrix)
+    cost_a = matrix[y01.astype(np.intp), (p > c_a).astype(np.intp)] / scale
+    cost_b = matrix[y01.astype(np.intp), (p > c_b).astype(np.intp)] / scale
+    d = cost_a - cost_b
+    ww = np.ones_like(d) if w is None else w
+    mean = float(np.average(d, weights=ww))
+    n_eff = ww.sum() ** 2 / np.sum(ww**2)
+    var = float(np.average((d - mean) ** 2, weights=ww))
+    return scale * mean, scale * float(np.sqrt(var / max(n_eff - 1.0, 1.0)))
+
+
+def recommend(content, y01, p, w, q, E, notes) -> None:
+    """Fill ``content.recommendation``: base rule, prevalence move, capacity (see the docs)."""
+    matrix = content.cost_matrix
+    cap = content.capacity
+    rows = {r.key: r for r in content.rules}
+    chosen = rows["chosen"]
+    key, name, cutoff = "chosen", chosen.label, content.chosen_cutoff
+    reasons: list[str] = []
+    searched_here = "hindsight" not in rows and content.cost_curve is not None and (
+        content.cutoff_source.startswith("the least-cost search"))
+    if content.plugin is not None and abs(content.plugin - content.chosen_cutoff) > 1e-12:
+        diff, se = _paired_difference(y01, p, content.sample_weight, matrix,
+                                      content.chosen_cutoff, content.plugin)
+        said = (f"on the labelled rows the {chosen.label} costs {diff:+.4g} per row against "
+                f"the {BAYES_NAME} (standard error {se:.2g})")
+        if searched_here:
+            if diff < -2 * se:
+                reasons.append(f"{said[0].upper()}{said[1:]}: more than twice its standard "
+                               "error, so it is kept; it was searched on these same rows, so "
+                               "this advantage is optimistic.")
+            else:
+                key, name, cutoff = "plugin", BAYES_NAME, content.plugin
+                reasons.append(f"The {BAYES_NAME} needs no search and {said}: within noise, "
+                               "so the search on these same rows adds nothing reliable.")
+        elif diff > 2 * se:
+            key, name, cutoff = "plugin", BAYES_NAME, content.plugin
+            reasons.append(f"{said[0].upper()}{said[1:]}: more than twice its standard error, "
+                           f"so the {BAYES_NAME} is the better rule on these rows.")
+        else:
+            reasons.append(f"{said[0].upper()}{said[1:]}; the {chosen.label} is kept "
+                           + ("(it also corrects for miscalibration seen on held-out "
+                              "predictions)." if diff <= 0 or diff <= 2 * se else "."))
+    else:
+        reasons.append(f"The {name} is {content.cutoff_source}.")
+    basis = "labelled"
+    base_cutoff = cutoff
+    if q is not None and E is not None and content.shift_pvalue is not None:
+        src, tgt = content.source_prevalence, content.target_prevalence
+        if content.shift_pvalue < 0.01 and 0 < cutoff < 1:
+            cutoff = float(shift_cutoff(cutoff, src, tgt))
+            key = "adapted" if key == "chosen" else key + "_adapted"
+            name = f"{name}, moved to the estimated prevalence"
+            reasons.append(f"The prevalence of the unlabelled rows is estimated at {tgt:.4f} "
+                           f"against {src:.4f} in the labelled rows (shift test p = "
+                           f"{content.shift_pvalue:.2g}), so the cutoff is moved to it "
+                           f"(Saerens et al. 2002): {cutoff:.4f}.")
+            if key not in rows:
+                content.rules.insert(2, rule_row(key, name, cutoff, y01, p, matrix,
+                                                  content.sample_weight, cap))
+        else:
+            reasons.append("The shift test does not reject an unchanged prevalence at the 1% "
+                           "level, so the cutoff is not moved.")
+        basis = "unlabelled"
+    acting = q if basis == "unlabelled" else p
+    acting_w = None if basis == "unlabelled" else content.sample_weight
+    if cap is not None and flagged_share(acting, cutoff, acting_w) > cap * (1 + 1e-12):
+        over = flagged_share(acting, cutoff, acting_w)
+        cap_cut = notes.compute("capacity", "capacity cutoff", capacity_cutoff, acting, cap,
+                                sample_weight=acting_w, score_bounds=(0.0, 1.0))
+        where = "unlabelled" if basis == "unlabelled" else "labelled"
+        reasons.append(f"At {cutoff:.4f} it would act on {100 * over:.1f}% of the {where} rows, "
+                       f"above the capacity of {100 * cap:.1f}%. The {CAPACITY_NAME} "
+                       f"{cap_cut:.4f} acts on the rows with the highest probabilities up to "
+                       "the capacity; with calibrated probabilities no other choice of that "
+                       "many rows has a lower expected cost.")
+        key, name, cutoff = "capacity", CAPACITY_NAME, float(cap_cut)
+        content.rules.insert(2, rule_row(key, name, cutoff, y01, p, matrix,
+                                          content.sample_weight, cap))
+    if basis == "unlabelled":
+        act = (q > cutoff).astype(np.intp)
+        share = float(act.mean())
+        cost = E.mean_of(act)
+    else:
+        share = flagged_share(p, cutoff, content.sample_weight)
+        cost = cutoff_cost(y01, p, matrix, cutoff, content.sample_weight)
+    content.recommendation = Recommendation(
+        key=key, name=name, cutoff=cutoff, reasons=reasons, expected_cost=cost,
+        acted_share=share, basis=basis,
+        within_capacity=None if cap is None else bool(share <= cap * (1 + 1e-12)),
+        base_cutoff=base_cutoff,
+    )
