@@ -21,6 +21,7 @@ from ._bootstrap import bootstrap_interval
 from ._calibration_tests import smooth_calibration_error
 from ._inputs import prepare_binary
 from ._scores import brier_score, log_loss
+from ._slope import calibration_slope_intercept
 
 __all__ = ["GroupCheck", "GroupGap", "GroupChecks", "calibration_by_group"]
 
@@ -187,8 +188,6 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
     both = pos.sum() > 0 and neg.sum() > 0
 
     def slope_parts():
-        from . import calibration_slope_intercept  # at call time: its module may move
-
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", UserWarning)
