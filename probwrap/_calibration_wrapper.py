@@ -15,6 +15,7 @@ from sklearn.utils.metaestimators import available_if
 from sklearn.utils.validation import check_is_fitted
 
 from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, _multiclass_dask
+from ._validation import plain
 from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
 from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
@@ -261,8 +262,8 @@ class CalibrationWrapper(HeldOutClassifierBase):
                     self._auto_names(len(ho.y_index), n_maps), scores.ndim == 1
                 )
                 warnings.warn(
-                    f"CalibrationWrapper(method='auto'): {self.method_!r} reached a boundary on "
-                    f"all held-out rows ({hit}); using {fallback!r} instead.",
+                    f"CalibrationWrapper(method='auto'): {plain(self.method_)!r} reached a boundary on "
+                    f"all held-out rows ({hit}); using {plain(fallback)!r} instead.",
                     UserWarning,
                     stacklevel=2,
                 )
@@ -310,7 +311,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
         if not isinstance(self.method, str) or self.method not in valid:
             raise ValueError(
                 f"`method` must be one of {valid} or a CalibrationMap instance; got "
-                f"{self.method!r}."
+                f"{plain(self.method)!r}."
             )
         if self.method == "auto":
             self._candidate_names()
@@ -319,7 +320,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
             and not isinstance(self.clip, bool)
             and 0.0 < self.clip < 0.5
         ):
-            raise ValueError(f"`clip` must be None or a float in (0, 0.5); got {self.clip!r}.")
+            raise ValueError(f"`clip` must be None or a float in (0, 0.5); got {plain(self.clip)!r}.")
 
     def _candidate_names(self) -> list[str]:
         names = list(CALIBRATION_METHODS) if self.candidates is None else list(self.candidates)
@@ -327,7 +328,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
         if unknown or not names:
             raise ValueError(
                 f"`candidates` must be a non-empty list drawn from {tuple(CALIBRATION_METHODS)}; "
-                f"got {self.candidates!r}."
+                f"got {plain(self.candidates)!r}."
             )
         return names
 
@@ -603,7 +604,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
                     se = float(np.sqrt(max(float(wn @ (d - dbar) ** 2), 0.0) / max(n_eff - 1.0, 1.0)))
                     if dbar > _RACE_SE * se and dbar > 0:
                         notes[nm] = (
-                            f"left out after fold {f}: log loss {dbar:.4g} above {best!r} there, "
+                            f"left out after fold {f}: log loss {dbar:.4g} above {plain(best)!r} there, "
                             f"{dbar / se if se > 0 else np.inf:.1f} standard errors"
                         )
                         active.remove(nm)
@@ -634,7 +635,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
             fallback = self._fallback_name(names, binary)
             reason = (
                 f"a class has only {int(present.min())} held-out row(s), too few to score "
-                f"candidate maps by cross-validation; using {fallback!r} (smoothed targets), "
+                f"candidate maps by cross-validation; using {plain(fallback)!r} (smoothed targets), "
                 "the most regularised map"
             )
             warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
@@ -688,7 +689,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
         reason = (
             "no candidate map could be scored and used: "
             + "; ".join(f"{nm}: {txt}" for nm, txt in notes.items())
-            + f"; using {fallback!r} (smoothed targets), the most regularised map"
+            + f"; using {plain(fallback)!r} (smoothed targets), the most regularised map"
         )
         warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
         notes.setdefault(fallback, "chosen as the fallback: no candidate was eligible")

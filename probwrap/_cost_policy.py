@@ -12,7 +12,7 @@ from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import check_is_fitted, column_or_1d
 
 from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, is_frozen
-from ._validation import check_labels, check_sample_weight
+from ._validation import check_labels, check_sample_weight, plain
 from .decision import (
     apply_class_offsets,
     budget_actions,
@@ -23,6 +23,7 @@ from .decision import (
     cutoff_interval,
     expected_costs,
     fit_action_budget,
+    guaranteed_cutoff,
     plugin_cutoff,
     search_cutoff,
     tune_class_offsets,
@@ -97,6 +98,14 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         Bootstrap resamples for ``cutoff_interval_``.
     confidence_level : float, default=0.95
         Coverage of ``cutoff_interval_``.
+    guarantee : dict or None, default=None
+        Binary cutoff with ``strategy="tuned"`` only: a requirement the rule must meet on new
+        rows, e.g. ``{"requirement": "recall", "target": 0.9, "confidence": 0.9}`` (keys as the
+        arguments of :func:`probwrap.decision.guaranteed_cutoff`: ``requirement`` and
+        ``target`` required, ``confidence`` default 0.9, ``method`` default
+        ``"high_probability"``). The least-cost cutoff is then searched among the cutoffs
+        certified on the held-out predictions; if none can be certified, :meth:`fit` raises
+        :class:`~probwrap.decision.GuaranteeUnreachableError` (never an unconstrained rule).
     tally_resolution : float, default=1e-3
         Dask input only: bin width on the log-odds scale of the score tallies that the
         predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
@@ -123,6 +132,9 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     heldout_cost_ : float or None
         Mean cost per row of the fitted policy on the held-out predictions (None when the
         strategy needed none: ``"bayes"`` / ``"fixed"`` without a capacity and not frozen).
+    guarantee_ : GuaranteedCutoff or None
+        With ``guarantee``: the certified cutoffs, the achieved value of the requirement on the
+        held-out rows, its guaranteed bound and p-value.
     cutoff_interval_ : CutoffInterval or None
         ``"tuned"`` binary cutoff: bootstrap interval of the cutoff and its spread across folds,
         computed on first access. None otherwise.
@@ -158,6 +170,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         random_state: Any = None,
         n_resamples: int = 200,
         confidence_level: float = 0.95,
+        guarantee: Mapping[str, Any] | None = None,
         tally_resolution: float = 1e-3,
     ) -> None:
         self.estimator = estimator
@@ -171,12 +184,13 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         self.random_state = random_state
         self.n_resamples = n_resamples
         self.confidence_level = confidence_level
+        self.guarantee = guarantee
         self.tally_resolution = tally_resolution
 
     # -- parameter checks ------------------------------------------------------------------
     def _check_params(self) -> None:
         if self.strategy not in _STRATEGIES:
-            raise ValueError(f"`strategy` must be one of {_STRATEGIES}; got {self.strategy!r}.")
+            raise ValueError(f"`strategy` must be one of {_STRATEGIES}; got {plain(self.strategy)!r}.")
         if self.strategy == "fixed" and self.cutoff is None:
             raise ValueError(
                 "`cutoff` must be given with strategy='fixed' (a probability cutoff, or "
@@ -184,8 +198,8 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             )
         if self.strategy != "fixed" and self.cutoff is not None:
             raise ValueError(
-                f"`cutoff` is only used with strategy='fixed'; got cutoff={self.cutoff!r} with "
-                f"strategy={self.strategy!r}. Set cutoff=None or strategy='fixed'."
+                f"`cutoff` is only used with strategy='fixed'; got cutoff={plain(self.cutoff)!r} with "
+                f"strategy={plain(self.strategy)!r}. Set cutoff=None or strategy='fixed'."
             )
         if isinstance(self.capacity, Mapping):
             if len(self.capacity) != 1:
@@ -200,6 +214,27 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             callable(self.costs) or isinstance(self.costs, Mapping)
         ):
             check_cost_matrix(self.costs)
+        if self.guarantee is not None:
+            self._guarantee_args()
+
+    def _guarantee_args(self) -> dict[str, Any]:
+        g = self.guarantee
+        allowed = {"requirement", "target", "confidence", "method"}
+        if not isinstance(g, Mapping) or not {"requirement", "target"} <= set(g) or (
+            set(g) - allowed
+        ):
+            raise ValueError(
+                "`guarantee` must be a dict with keys 'requirement' and 'target' (and optionally "
+                f"'confidence', 'method'), e.g. {{'requirement': 'recall', 'target': 0.9}}; got "
+                f"{plain(g)!r}."
+            )
+        if self.strategy != "tuned" or self.costs is None or callable(self.costs):
+            raise ValueError(
+                "`guarantee` needs strategy='tuned' with constant costs (the cutoff is searched "
+                f"among the certified ones); got strategy={plain(self.strategy)!r}"
+                f"{' and no costs' if self.costs is None else ''}."
+            )
+        return dict(g)
 
     def _binary_only(self) -> bool:
         return isinstance(self.costs, Mapping) or (
@@ -297,6 +332,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         budget_index, budget_share = self._resolve_capacity(n_actions)
 
         self.cutoff_ = None
+        self.guarantee_ = None
         self.class_offsets_ = None
         self.cost_curve_ = None
         self.action_budget_ = None
@@ -305,6 +341,11 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         self._interval_cache = None
 
         proba = None if ho is None else self._check_heldout_proba(ho.values, k)
+        if self.guarantee is not None and not self._cutoff_mode:
+            raise ValueError(
+                "`guarantee` applies to a binary cutoff (two classes, two actions, constant "
+                f"costs); here there are {k} classes and {n_actions} actions."
+            )
         if self._cutoff_mode:
             self._fit_cutoff(ho, proba, matrix, budget_share)
         else:
@@ -418,7 +459,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             matches = np.flatnonzero(self.actions_ == label)
             if matches.shape[0] != 1:
                 raise ValueError(
-                    f"`capacity` names action {label!r}, which is not among the actions "
+                    f"`capacity` names action {plain(label)!r}, which is not among the actions "
                     f"{self.actions_.tolist()}."
                 )
             return int(matches[0]), check_capacity(share)
@@ -432,6 +473,16 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     def _fit_cutoff(self, ho, proba, matrix, share) -> None:
         if self.strategy == "fixed":
             cutoff = _check_cutoff(self.cutoff)
+        elif self.guarantee is not None:
+            p = proba[:, 1]
+            g = guaranteed_cutoff(
+                p, ho.y_index, matrix, sample_weight=ho.sample_weight, capacity=share,
+                score_bounds=(0.0, 1.0), **self._guarantee_args(),
+            )
+            self.guarantee_ = g
+            self.cost_curve_ = g.unconstrained
+            self.cutoff_ = g.cutoff
+            return
         elif self.strategy == "tuned" and self.costs is not None:
             p = proba[:, 1]
             res = search_cutoff(
@@ -464,7 +515,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
             if offsets.shape != (k,) or not np.all(np.isfinite(offsets)):
                 raise ValueError(
                     f"`cutoff` must be finite per-class offsets of shape ({k},); got "
-                    f"{self.cutoff!r}."
+                    f"{plain(self.cutoff)!r}."
                 )
         elif self.strategy == "tuned" and self.costs is not None:
             res = tune_class_offsets(proba, ho.y_index, costs, sample_weight=ho.sample_weight)
@@ -562,10 +613,10 @@ class CostPolicyWrapper(HeldOutClassifierBase):
 
 def _check_cutoff(cutoff: Any) -> float:
     if not _scalar_cutoff(cutoff) or not np.isfinite(float(cutoff)):
-        raise ValueError(f"`cutoff` must be a finite probability in [0, 1]; got {cutoff!r}.")
+        raise ValueError(f"`cutoff` must be a finite probability in [0, 1]; got {plain(cutoff)!r}.")
     value = float(cutoff)
     if not 0.0 <= value <= 1.0:
-        raise ValueError(f"`cutoff` must be a probability in [0, 1]; got {cutoff!r}.")
+        raise ValueError(f"`cutoff` must be a probability in [0, 1]; got {plain(cutoff)!r}.")
     return value
 
 

@@ -34,7 +34,7 @@ from sklearn.utils.validation import check_is_fitted, column_or_1d, has_fit_para
 
 from ._predictions import HeldOutPredictions
 from ._predictions import resolve_response as _resolve_response
-from ._validation import check_labels, check_sample_weight
+from ._validation import check_labels, check_sample_weight, plain
 
 __all__ = ["HeldOutClassifierBase", "HeldOutPredictions"]
 
@@ -84,7 +84,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         except (TypeError, ValueError) as exc:
             raise ValueError(
                 "`cv` must be an int >= 2, a scikit-learn splitter or an iterable of "
-                f"(train, test) index pairs; got {cv!r} ({exc})."
+                f"(train, test) index pairs; got {plain(cv)!r} ({exc})."
             ) from exc
 
     def _route_fit_params(self, sample_weight: Any, fit_params: dict) -> tuple[dict, dict]:

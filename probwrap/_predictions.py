@@ -11,6 +11,8 @@ from typing import Any
 
 import numpy as np
 
+from ._validation import plain
+
 __all__ = ["HeldOutPredictions", "resolve_response"]
 
 _RESPONSES = ("predict_proba", "decision_function", "auto")
@@ -56,7 +58,7 @@ class HeldOutPredictions:
 
 def resolve_response(estimator: Any, response: str) -> str:
     if response not in _RESPONSES:
-        raise ValueError(f"`response` must be one of {_RESPONSES}; got {response!r}.")
+        raise ValueError(f"`response` must be one of {_RESPONSES}; got {plain(response)!r}.")
     has_proba = hasattr(estimator, "predict_proba")
     has_decision = hasattr(estimator, "decision_function")
     if response == "auto":

@@ -11,7 +11,9 @@ import numpy as np
 from sklearn.utils.validation import check_is_fitted
 
 from ._heldout import HeldOutClassifierBase, _is_dask, _multiclass_dask
+from ._validation import plain
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
+from .shift._estimate import evidence_cutoff
 from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
 
 __all__ = ["PriorShiftWrapper"]
@@ -44,8 +46,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     estimator's own probabilities with ``calibration=None``), re-weighted to the prior in use,
     ``applied_prior_``: ``target_prior`` when it is given; otherwise, after ``adapt``, the
     source prior moved toward the estimate ``target_prior_`` by the share the evidence
-    supports, ``adaptation_weight_ = max(0, 1 - min_evidence * (k - 1) / shift_statistic_)``
-    — nothing at all while the shift test's statistic stays below ``min_evidence * (k - 1)``;
+    supports, ``adaptation_weight_ = max(0, 1 - evidence_cutoff_ * (k - 1) / shift_statistic_)``
+    — nothing at all while the shift test's statistic stays below ``evidence_cutoff_ * (k - 1)``;
     before any ``adapt`` the source prior, which leaves the calibrated posteriors exactly as
     they are. So ``target_prior`` equal to
     ``source_prior_`` returns exactly what the wrapper returns without a target, and ``adapt``
@@ -85,18 +87,29 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     prior_strength : float, default=20.0
         ``method="em"``: pseudo-rows of a Dirichlet prior centred on the source prior; the
         estimate is its MAP (0: plain maximum likelihood).
-    min_evidence : float, default=2.0
-        How much evidence of a shift ``adapt`` needs before it moves the predictions, and how
-        far it moves them: with ``T = shift_statistic_`` (chi-square with ``k - 1`` degrees of
-        freedom under no shift) the applied prior is ``source + w (estimate - source)`` with
-        ``w = max(0, 1 - min_evidence (k - 1) / T)``. For an estimate ``X`` of a change
-        ``theta`` with standard error ``s``, ``theta^2 / (theta^2 + s^2)`` is the fraction of
-        ``X`` with the least squared error; ``w`` estimates it with ``theta^2 = X^2 - c s^2``
-        (``c = 1``: the plug-in of Thompson 1968 / positive-part James-Stein; the default 2
-        guards against the skewed estimates of weakly separating models and was chosen in
-        ``benchmarks/shift.py``). For two classes nothing moves while ``T <= 2`` (p >= 0.16).
-        0 applies the estimate as it is (``prior_strength=0, min_evidence=0`` is the plain
-        maximum-likelihood correction of Saerens et al. 2002).
+    min_evidence : float, default=1.0
+        Smallest cutoff ``c`` of the rule that decides how far ``adapt`` moves the predictions:
+        with ``T = shift_statistic_`` (chi-square with ``k - 1`` degrees of freedom under no
+        shift) the applied prior is ``source + w (estimate - source)`` with
+        ``w = max(0, 1 - c (k - 1) / T)``. For an estimate ``X`` of a change ``theta`` with
+        standard error ``s``, ``theta^2 / (theta^2 + s^2)`` is the share of ``X`` with the
+        least squared error; ``c = 1`` estimates it with ``theta^2 = max(0, X^2 - s^2)``, the
+        empirical-Bayes (type-II maximum-likelihood) choice for a normal prior on the change
+        centred on no change, i.e. the positive-part James-Stein rule (Efron & Morris 1973).
+        ``c`` is raised above this floor only as far as ``max_harm`` requires
+        (``evidence_cutoff_``). 0 with ``max_harm=None`` applies the estimate as it is
+        (``prior_strength=0, min_evidence=0, max_harm=None`` is the plain maximum-likelihood
+        correction of Saerens et al. 2002).
+    max_harm : float or None, default=0.01
+        Largest expected relative increase of the log loss, *when nothing moved*, that
+        ``adapt`` accepts: the cutoff ``c`` is the smallest value >= ``min_evidence`` at which
+        the expected harm of the rule under no shift — computed from the unlabelled rows
+        themselves (how much the predictions change per unit of prior, against how well the
+        rows pin the prior down, see :func:`probwrap.shift._estimate.null_harm_scale`) — is at
+        most ``max_harm`` (a limited-risk empirical-Bayes rule in the spirit of Efron & Morris
+        1972). Strongly separating models or common classes keep ``c`` near 1; a weak model
+        at a small prevalence, whose rows say little about the prior while every prediction
+        reacts to it, gets a high cutoff. None: ``c = min_evidence``.
     interval : {"score", "bca", "percentile"}, default="score"
         How ``target_prior_interval_`` is built: the inverted two-sample score test (two
         classes; no resampling), or a BCa / percentile bootstrap of ``n_resamples`` Poisson
@@ -142,6 +155,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     adaptation_weight_ : float
         The share ``w`` of the way from the source prior to the estimate that was applied
         (0 when the estimator could not identify the priors).
+    evidence_cutoff_ : float
+        The cutoff ``c`` used by the last ``adapt`` (``min_evidence``, raised by
+        ``max_harm``); nothing moves while ``shift_statistic_ <= c (k - 1)``.
     applied_prior_ : ndarray of shape (n_classes,)
         The prior ``predict_proba`` re-weights to (``source_prior_`` means: no change).
     n_dropped_resamples_ : int
@@ -182,7 +198,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         em_tol: float = 1e-6,
         em_max_iter: int = 1000,
         prior_strength: float = 20.0,
-        min_evidence: float = 2.0,
+        min_evidence: float = 1.0,
+        max_harm: float | None = 0.01,
         interval: str = "score",
         cv: Any = 5,
         n_jobs: int | None = None,
@@ -199,6 +216,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.em_max_iter = em_max_iter
         self.prior_strength = prior_strength
         self.min_evidence = min_evidence
+        self.max_harm = max_harm
         self.interval = interval
         self.cv = cv
         self.n_jobs = n_jobs
@@ -208,15 +226,19 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     # -- parameters ------------------------------------------------------------------------------
     def _check_params(self) -> None:
         if self.method not in PRIOR_METHODS:
-            raise ValueError(f"`method` must be one of {PRIOR_METHODS}; got {self.method!r}.")
+            raise ValueError(f"`method` must be one of {PRIOR_METHODS}; got {plain(self.method)!r}.")
         if self.calibration not in CALIBRATIONS:
             raise ValueError(
-                f"`calibration` must be one of {CALIBRATIONS}; got {self.calibration!r}."
+                f"`calibration` must be one of {CALIBRATIONS}; got {plain(self.calibration)!r}."
             )
         c = self.min_evidence
         if not (isinstance(c, numbers.Real) and not isinstance(c, bool) and np.isfinite(c)
                 and c >= 0):
-            raise ValueError(f"`min_evidence` must be a finite number >= 0; got {c!r}.")
+            raise ValueError(f"`min_evidence` must be a finite number >= 0; got {plain(c)!r}.")
+        h = self.max_harm
+        if h is not None and not (isinstance(h, numbers.Real) and not isinstance(h, bool)
+                                  and np.isfinite(h) and h > 0):
+            raise ValueError(f"`max_harm` must be a finite number > 0 or None; got {plain(h)!r}.")
 
     def _resolve_target_prior(self) -> np.ndarray | None:
         prior = self.target_prior
@@ -300,7 +322,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.known_prior_ = self._resolve_target_prior()
         for name in ("target_prior_", "target_prior_interval_", "shift_pvalue_", "shift_statistic_",
                      "shift_detected_", "n_dropped_resamples_", "prior_estimate_",
-                     "adaptation_weight_"):
+                     "adaptation_weight_", "evidence_cutoff_"):
             if hasattr(self, name):
                 delattr(self, name)
         self.applied_prior_ = (
@@ -413,7 +435,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.n_dropped_resamples_ = int(getattr(res, "n_dropped", 0))
         k = self.classes_.shape[0]
         stat = res.shift_statistic
-        threshold = float(self.min_evidence) * (k - 1)
+        cutoff = evidence_cutoff(
+            getattr(res, "null_harm_scale", None), k - 1, self.max_harm, float(self.min_evidence)
+        )
+        self.evidence_cutoff_ = float(cutoff)
+        threshold = cutoff * (k - 1)
         if not getattr(res, "identified", True) or stat is None or not np.isfinite(stat):
             weight = 0.0
         elif threshold == 0:

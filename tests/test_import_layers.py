@@ -30,6 +30,7 @@ LAYERS = {
     "shift": 1,
     "metrics": 1,
     "datasets": 1,
+    "late_labels": 1,
     "scale": 2,
     "aggregated": 2,
     "_heldout": 3,

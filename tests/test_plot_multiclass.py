@@ -150,3 +150,20 @@ def test_class_prior_display_artists():
         ClassPriorDisplay(source_prior=src, target_prior=tgt, interval=iv[:2])
     with pytest.raises(ValueError, match="`class_names`"):
         ClassPriorDisplay(source_prior=src, target_prior=tgt, class_names=["a"])
+
+
+def test_class_prior_interval_not_containing_its_estimate_is_drawn_as_given():
+    # a bootstrap percentile interval of a skewed estimator may miss the estimate itself; the
+    # bar must still span the whole interval (it used to be clipped at the estimate), and the
+    # reader is told
+    src, tgt = [0.9, 0.06, 0.04], [0.8, 0.05, 0.15]
+    iv = np.array([[0.75, 0.85], [0.06, 0.11], [0.10, 0.14]])  # classes 2 and 3 miss theirs
+    with pytest.warns(UserWarning, match=r"outside its interval for 2 class\(es\).*b: 0\.05"):
+        disp = ClassPriorDisplay(source_prior=src, target_prior=tgt, interval=iv,
+                                 class_names=["a", "b", "c"]).plot()
+    segs = disp.interval_artist_.lines[2][0].get_segments()
+    np.testing.assert_allclose([s[0][1] for s in segs], iv[:, 0], rtol=1e-12)
+    np.testing.assert_allclose([s[1][1] for s in segs], iv[:, 1], rtol=1e-12)
+    with pytest.raises(ValueError, match="`interval` row 1 must have low <= high"):
+        ClassPriorDisplay(source_prior=src, target_prior=tgt,
+                          interval=[[0.7, 0.9], [0.2, 0.1], [0.1, 0.2]])

@@ -3,11 +3,14 @@
 - Wilson (1927) score interval: statsmodels' ``proportion_confint(method="wilson")``.
 - Bröcker & Smith (2007) consistency band: with every forecast in a bin equal to ``p``, the
   simulated observed frequency is Binomial(n, p) / n, so the band ends are the binomial
-  quantiles of ``scipy.stats.binom`` divided by n.
+  quantiles of ``scipy.stats.binom`` divided by n; with row weights as frequencies, the exact
+  distribution of a bin's count is the convolution of the rows' binomial pmfs.
 """
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy.stats import binom
 from statsmodels.stats.proportion import proportion_confint
 
@@ -39,25 +42,81 @@ def test_consistency_band_matches_binomial_quantiles():
         assert low[j] < pj < high[j]
 
 
-def test_consistency_band_is_seeded_and_weights_act_as_documented():
+def _exact_quantiles(p, w, level):
+    """Quantiles of the weighted observed frequency of one bin under calibration, exactly.
+
+    Reference: a row of whole weight m stands for m rows, so the bin's number of positives is
+    the sum of independent Binomial(m_i, p_i) counts (scipy.stats.binom pmfs, convolved); the
+    observed frequency is that count over the bin's total weight.
+    """
+    pmf = np.array([1.0])
+    for pi, mi in zip(p, w, strict=True):
+        pmf = np.convolve(pmf, binom.pmf(np.arange(int(mi) + 1), int(mi), pi))
+    cdf = np.cumsum(pmf)
+    alpha = 1.0 - level
+    lo = int(np.searchsorted(cdf, alpha / 2.0))
+    hi = int(np.searchsorted(cdf, 1.0 - alpha / 2.0))
+    return lo / w.sum(), hi / w.sum()
+
+
+def test_consistency_band_is_seeded_and_weights_are_row_frequencies():
     rng = np.random.default_rng(0)
     p = rng.uniform(size=300)
     idx = (p * 3).astype(int)
     a = consistency_band(p, idx, 3, random_state=1)
     b = consistency_band(p, idx, 3, random_state=1)
     np.testing.assert_array_equal(a[0], b[0])
-    # weights: the simulated frequency is the weighted share of simulated positives, so scaling
-    # every weight by a constant changes nothing (same draws)...
-    c = consistency_band(p, idx, 3, sample_weight=np.full(300, 2.5), random_state=1)
-    np.testing.assert_allclose(c, a, rtol=1e-12)
-    # ...and unequal weights do change the band: a bin dominated by one row's draw is wider
-    w = np.ones(300)
-    w[np.flatnonzero(idx == 1)[0]] = 1000.0
-    d = consistency_band(p, idx, 3, sample_weight=w, random_state=1)
-    assert d[1][1] - d[0][1] > a[1][1] - a[0][1] + 0.2
+    # weights all 1 are no weights (the same draws)
+    c = consistency_band(p, idx, 3, sample_weight=np.ones(300), random_state=1)
+    np.testing.assert_array_equal(c, a)
+    # weights that cannot be frequencies (summing to 1) are rescaled to Kish's effective size,
+    # equal weights to 1 each, with a warning: then the same band as without weights
+    from probwrap.calibration import WeightScaleWarning
+
+    with pytest.warns(WeightScaleWarning, match="Kish"):
+        d = consistency_band(p, idx, 3, sample_weight=np.full(300, 1 / 300), random_state=1)
+    np.testing.assert_allclose(d, a, rtol=1e-12)
+    # frequencies: every row counted twice is twice the rows, a narrower band
+    e = consistency_band(p, idx, 3, sample_weight=np.full(300, 2.0), random_state=1)
+    assert np.all(e[1] - e[0] < a[1] - a[0])
     # an empty bin has no band
     low, high = consistency_band(p[idx < 2], idx[idx < 2], 3, random_state=0)
     assert np.isnan(low[2]) and np.isnan(high[2])
+
+
+def test_consistency_band_with_whole_weights_matches_exact_binomial_sums():
+    rng = np.random.default_rng(4)
+    p = rng.uniform(0.05, 0.6, size=25)
+    w = rng.integers(1, 9, size=25).astype(float)
+    low, high = consistency_band(p, np.zeros(25, dtype=int), 1, sample_weight=w,
+                                 n_draws=20000, random_state=5)
+    ref_lo, ref_hi = _exact_quantiles(p, w, 0.95)
+    # 20000 simulated draws: the empirical quantile may land one count away from the exact one
+    assert abs(low[0] - ref_lo) <= 1.0 / w.sum() + 1e-12
+    assert abs(high[0] - ref_hi) <= 1.0 / w.sum() + 1e-12
+
+
+@settings(max_examples=10, deadline=None, derandomize=True)  # Monte Carlo: fixed examples
+@given(seed=st.integers(0, 2**31 - 1), n=st.integers(3, 12))
+def test_consistency_band_weight_two_is_a_duplicated_row(seed, n):
+    # property: a row of weight m gives the band of m copies of the row (weight 1 each); the
+    # two are simulated with different draws, so both are compared with the exact quantiles
+    rng = np.random.default_rng(seed)
+    p = rng.uniform(0.05, 0.95, size=n)
+    w = rng.integers(1, 4, size=n).astype(float)
+    weighted = consistency_band(p, np.zeros(n, dtype=int), 1, sample_weight=w, n_draws=3000,
+                                random_state=seed % 1000)
+    copies = consistency_band(np.repeat(p, w.astype(int)), np.zeros(int(w.sum()), dtype=int),
+                              1, n_draws=3000, random_state=seed % 1000 + 1)
+    ref = _exact_quantiles(p, w, 0.95)
+    # 3000 draws: each empirical quantile within one count of the exact one (a quantile on
+    # the edge of a count step can go either way), so the two bands within two counts
+    step = 1.0 / w.sum()
+    for band in (weighted, copies):
+        assert abs(band[0][0] - ref[0]) <= step + 1e-12
+        assert abs(band[1][0] - ref[1]) <= step + 1e-12
+    assert abs(weighted[0][0] - copies[0][0]) <= 2 * step + 1e-12
+    assert abs(weighted[1][0] - copies[1][0]) <= 2 * step + 1e-12
 
 
 @pytest.mark.parametrize(

@@ -4,6 +4,7 @@ and reference checks of the new statistics (score test, BCa, penalised likelihoo
 
 from __future__ import annotations
 
+import copy
 import warnings
 
 import numpy as np
@@ -71,7 +72,7 @@ def test_collapse_case_does_not_move_predictions_beyond_the_interval(weak_model)
     assert np.all(after >= lo_a - 1e-12) and np.all(after <= hi_a + 1e-12)
     assert lo <= model.applied_prior_[1] <= hi
     # The estimate applied in full also moves the predictions only within the interval.
-    eager = PriorShiftWrapper(weak_model, min_evidence=0, random_state=0).fit(X, y)
+    eager = PriorShiftWrapper(weak_model, min_evidence=0, max_harm=None, random_state=0).fit(X, y)
     with pytest.warns(BoundaryPriorWarning):
         eager.adapt(X_new)
     moved = eager.predict_proba(X_new)[:, 1]
@@ -86,21 +87,24 @@ def test_collapse_case_does_not_move_predictions_beyond_the_interval(weak_model)
 
 
 def test_predictions_do_not_move_without_evidence():
-    # Statistic at or below min_evidence * (k - 1): exactly the calibrated posteriors.
+    # Statistic at or below evidence_cutoff_ * (k - 1): exactly the calibrated posteriors.
     rng = np.random.default_rng(31)
     p_lab, y_lab = binary_gaussian(2000, 0.3, rng, sep=1.5)
     X = np.log(p_lab[:, 1:] / p_lab[:, :1])  # one feature whose logistic fit is the posterior
-    model = PriorShiftWrapper(LogisticRegression(), cv=3, random_state=0).fit(X, y_lab)
+    fitted = PriorShiftWrapper(LogisticRegression(), cv=3, random_state=0).fit(X, y_lab)
     for seed in range(6):
         p_new, _ = binary_gaussian(1500, 0.3, np.random.default_rng(100 + seed), sep=1.5)
         X_new = np.log(p_new[:, 1:] / p_new[:, :1])
+        model = copy.deepcopy(fitted)  # each batch adapts a wrapper that has not adapted yet
         before = model.predict_proba(X_new)
         model.adapt(X_new)
-        if model.shift_statistic_ <= 2.0:
+        c = model.evidence_cutoff_
+        assert c >= model.min_evidence
+        if model.shift_statistic_ <= c:
             assert not model.shift_detected_ and model.adaptation_weight_ == 0.0
             np.testing.assert_array_equal(model.predict_proba(X_new), before)
         else:
-            expected = 1 - 2.0 / model.shift_statistic_
+            expected = 1 - c / model.shift_statistic_
             assert model.adaptation_weight_ == pytest.approx(expected, rel=1e-12)
 
 
@@ -124,6 +128,76 @@ def test_no_evidence_keeps_predictions_and_evidence_moves_them(weak_model):
         model.applied_prior_, model.source_prior_ + w * (model.target_prior_ - model.source_prior_)
     )
     assert not np.allclose(model.predict_proba(X[:200]), before)
+
+
+def test_null_harm_is_scipy_chi_square_expectation():
+    # Reference: SciPy's numerical expectation over the chi-square distribution, and the
+    # chi-square mean (cutoff 0 leaves the estimate untouched: E[T] = df).
+    from scipy.stats import chi2
+
+    from probwrap.shift._estimate import null_harm
+
+    for df in (1, 2, 4):
+        assert null_harm(0.0, df) == df
+        for c in (0.5, 1.0, 2.0, 3.5):
+            a = c * df
+            ref = chi2(df).expect(lambda t, a=a: (t - a) ** 2 / t, lb=a)
+            assert null_harm(c, df) == pytest.approx(ref, rel=1e-8)  # two quadratures
+    # and it falls with the cutoff (what the root-finding in evidence_cutoff relies on)
+    values = [null_harm(c, 1) for c in np.linspace(0, 8, 17)]
+    assert np.all(np.diff(values) < 0)
+
+
+def test_harm_scale_is_the_log_loss_curvature_over_the_estimate_variance():
+    # Consistency test of the second-order formula: the excess log loss (expected under the
+    # calibrated posteriors themselves) of re-weighting by a small change d of the prior is
+    # 1/2 K d^2, with K = E[p(1-p)] / (pi0 pi1)^2 for two classes.
+    from probwrap.shift._estimate import null_harm_scale
+
+    rng = np.random.default_rng(8)
+    p, _ = binary_gaussian(4000, 0.1, rng, sep=1.0)
+    src = np.array([0.9, 0.1])
+    w = np.ones(p.shape[0])
+    var = 2.5e-5  # covariance of the mean score difference (any positive number)
+    scale = null_harm_scale(p, w, src, np.array([[var]]))
+    ent = -np.sum(p * np.log(p), axis=1).mean()
+    j = np.mean((p[:, 1] / src[1] - p[:, 0] / src[0]) ** 2)
+    d = 1e-3
+    moved = adjust_to_prior(p, src, [src[0] - d, src[1] + d])
+    excess = np.mean(np.sum(p * (np.log(p) - np.log(moved)), axis=1))  # KL, per row
+    curvature = 2 * excess / d**2
+    # scale = 1/2 K sigma^2 / L0 with sigma^2 = var / J^2; third-order term is O(d): 1 %
+    assert scale == pytest.approx(0.5 * curvature * var / j**2 / ent, rel=1e-2)
+
+
+def test_cutoff_rises_only_where_no_shift_would_be_harmed(weak_model):
+    # A weak model at a small prevalence: its rows say little about the prior while every
+    # prediction reacts to it, so the cutoff rises above min_evidence; a strong model at
+    # 30 % keeps it at the floor. The expected harm at the chosen cutoff is max_harm.
+    from probwrap.shift._estimate import null_harm
+
+    rng = np.random.default_rng(5)
+    X, y = gaussian(2000, 0.02, rng, delta=0.74)
+    X_new, _ = gaussian(2000, 0.02, rng, delta=0.74)
+    weak = PriorShiftWrapper(weak_model, random_state=0).fit(X, y)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", BoundaryPriorWarning)
+        weak.adapt(X_new)
+    scale = weak.prior_estimate_.null_harm_scale
+    assert weak.evidence_cutoff_ > 2.0
+    assert scale * null_harm(weak.evidence_cutoff_, 1) == pytest.approx(0.01, rel=1e-4)
+    loose = PriorShiftWrapper(weak_model, max_harm=None, random_state=0).fit(X, y)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", BoundaryPriorWarning)
+        loose.adapt(X_new)
+    assert loose.evidence_cutoff_ == 1.0
+    X_s, y_s = gaussian(2000, 0.3, rng, delta=2.5)
+    strong_model = FrozenEstimator(LogisticRegression().fit(*gaussian(5000, 0.3, rng, delta=2.5)))
+    strong = PriorShiftWrapper(strong_model, random_state=0).fit(X_s, y_s)
+    strong.adapt(gaussian(2000, 0.3, rng, delta=2.5)[0])
+    assert strong.evidence_cutoff_ == 1.0
+    with pytest.raises(ValueError, match="max_harm"):
+        PriorShiftWrapper(weak_model, max_harm=0.0).fit(X, y)
 
 
 def test_map_estimate_lies_between_source_and_maximum_likelihood():
@@ -204,6 +278,9 @@ def test_weight_scale_changes_nothing_in_the_wrapper(weak_model):
         np.testing.assert_allclose(m.target_prior_interval_, fits[0].target_prior_interval_,
                                    rtol=1e-7)
         assert m.shift_pvalue_ == pytest.approx(fits[0].shift_pvalue_, rel=1e-9)
+        # the cutoff and the share applied (hence the predictions) do not move either
+        assert m.evidence_cutoff_ == pytest.approx(fits[0].evidence_cutoff_, rel=1e-6)
+        assert m.adaptation_weight_ == pytest.approx(fits[0].adaptation_weight_, abs=1e-7)
 
 
 def test_dropped_resamples_are_counted_and_reported():

@@ -128,7 +128,7 @@ class CalibrationMap(BaseEstimator):
         s = self._check_scores(scores, fitting=True)
         y = np.asarray(y)
         if y.ndim == 0:
-            raise ValueError(f"`y` must be 1-d of shape (n,); got a scalar {y!r}.")
+            raise ValueError(f"`y` must be 1-d of shape (n,); got a scalar {plain(y)!r}.")
         if y.dtype.kind == "f" and np.isnan(y).any():
             raise ValueError("`y` contains NaN; labels must be known for every row.")
         check_same_length(("scores", s), ("y", y))

@@ -7,7 +7,7 @@ import warnings
 import numpy as np
 from scipy.special import expit, log_expit
 
-from .._validation import power_of_two_unit
+from .._validation import plain, power_of_two_unit
 from ._base import CalibrationMap
 from ._platt import _logistic_loss, _separated, _weighted_logistic, smoothed_binary_targets
 
@@ -86,7 +86,7 @@ class BetaMap(CalibrationMap):
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         if not isinstance(self.smooth_targets, (bool, np.bool_)):
-            raise ValueError(f"`smooth_targets` must be True or False; got {self.smooth_targets!r}.")
+            raise ValueError(f"`smooth_targets` must be True or False; got {plain(self.smooth_targets)!r}.")
         X = _beta_features(scores)
         if _separated(scores, y, w):
             self.boundary_ = "scores separate the classes: the beta fit is a near-step"

@@ -42,6 +42,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ._base import CalibrationMap
 from ._beta import BetaMap
 from ._binning import BinningMap
@@ -155,7 +156,7 @@ def _plain(value: Any, where: str) -> Any:
         return int(value)
     if isinstance(value, numbers.Real):
         if not math.isfinite(float(value)):
-            raise ValueError(f"{where} must be finite to be saved; got {value!r}.")
+            raise ValueError(f"{where} must be finite to be saved; got {plain(value)!r}.")
         return float(value)
     if isinstance(value, str):
         return value
@@ -180,7 +181,7 @@ def _classes_kind(classes: np.ndarray) -> str:
 
 def _check_scale(value: Any, where: str) -> str:
     if not isinstance(value, str) or value not in MAP_SCORE_SCALES:
-        raise ValueError(f"{where} must be one of {list(MAP_SCORE_SCALES)}; got {value!r}.")
+        raise ValueError(f"{where} must be one of {list(MAP_SCORE_SCALES)}; got {plain(value)!r}.")
     return value
 
 
@@ -213,7 +214,7 @@ def _check_plain_tree(value: Any, where: str) -> None:
         if isinstance(item, Mapping):
             for key, sub in item.items():
                 if not isinstance(key, str):
-                    raise ValueError(f"{path} has a key {key!r} that is not a string.")
+                    raise ValueError(f"{path} has a key {plain(key)!r} that is not a string.")
                 stack.append((sub, f"{path}.{key}", depth + 1))
         else:
             stack.extend((sub, f"{path}[{i}]", depth + 1) for i, sub in enumerate(item))
@@ -359,10 +360,10 @@ def map_score_scale(description: Mapping[str, Any], *, score_scale: str | None =
                 f"scores are probabilities or log-odds; state it (one of {list(MAP_SCORE_SCALES)})."
             )
         return score_scale
-    _check_scale(stated, f"field {field!r}")
+    _check_scale(stated, f"field {plain(field)!r}")
     if score_scale is not None and score_scale != stated:
         raise ValueError(
-            f"`score_scale` is {score_scale!r} but field {field!r} of the map says {stated!r}."
+            f"`score_scale` is {plain(score_scale)!r} but field {plain(field)!r} of the map says {plain(stated)!r}."
         )
     return stated
 
@@ -437,7 +438,7 @@ def map_from_dict(
         )
     if description.get("format") != MAP_FORMAT:
         raise ValueError(
-            f"field 'format' must be {MAP_FORMAT!r}; got {_short(description.get('format'))} (is "
+            f"field 'format' must be {plain(MAP_FORMAT)!r}; got {_short(description.get('format'))} (is "
             "this a probwrap map file?)."
         )
     version = _need(description, "schema_version")
@@ -464,7 +465,7 @@ def map_from_dict(
         raise ValueError("fields 'settings' and 'fitted' must be JSON objects.")
     unknown = sorted(str(k) for k in set(settings) - set(setting_names))
     if unknown:
-        raise ValueError(f"field 'settings' has unknown entries {unknown} for method {method!r}.")
+        raise ValueError(f"field 'settings' has unknown entries {unknown} for method {plain(method)!r}.")
     for name in setting_names:
         if name in settings:
             value = settings[name]
@@ -544,7 +545,7 @@ def _check_settings(method: str, m: Any) -> None:
         m.smooth_targets, bool
     ):
         raise ValueError(
-            f"field 'settings.smooth_targets' must be true or false; got {m.smooth_targets!r}."
+            f"field 'settings.smooth_targets' must be true or false; got {plain(m.smooth_targets)!r}."
         )
     if method in ("vector_scaling", "matrix_scaling"):
         try:

@@ -8,6 +8,7 @@ import warnings
 import numpy as np
 from scipy.optimize import minimize
 
+from .._validation import plain
 from ._base import CalibrationMap
 
 __all__ = ["VectorScalingMap", "MatrixScalingMap"]
@@ -126,9 +127,9 @@ def _newton(objective, hessian, theta: np.ndarray, max_iter: int = 200) -> tuple
 def _check_settings(m: CalibrationMap) -> None:
     s = m.shrinkage
     if isinstance(s, bool) or not isinstance(s, numbers.Real) or not (np.isfinite(s) and s >= 0):
-        raise ValueError(f"`shrinkage` must be a finite number >= 0; got {s!r}.")
+        raise ValueError(f"`shrinkage` must be a finite number >= 0; got {plain(s)!r}.")
     if not isinstance(m.smooth_targets, (bool, np.bool_)):
-        raise ValueError(f"`smooth_targets` must be True or False; got {m.smooth_targets!r}.")
+        raise ValueError(f"`smooth_targets` must be True or False; got {plain(m.smooth_targets)!r}.")
 
 
 def _fit_linear_softmax(

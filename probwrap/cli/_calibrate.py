@@ -20,6 +20,7 @@ from typing import Any
 import numpy as np
 from sklearn.base import BaseEstimator, ClassifierMixin
 
+from .._validation import plain
 from ._common import (
     DataError,
     add_positive_label_flag,
@@ -193,7 +194,7 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
         raise DataError(f"{path}: not a probwrap map (the file must hold a JSON object)")
     if description.get("format") != MAP_FORMAT:
         raise DataError(
-            f"{path}: not a probwrap map (field 'format' must be {MAP_FORMAT!r}; got "
+            f"{path}: not a probwrap map (field 'format' must be {plain(MAP_FORMAT)!r}; got "
             f"{shown(description.get('format'))})"
         )
     metadata = description.get("metadata", {})

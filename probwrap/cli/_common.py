@@ -17,6 +17,8 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
+
 __all__ = [
     "DataError", "MissingExtraError", "OPTIONAL_MODULES", "require", "shown", "clean",
     "TABLE_SUFFIXES", "table_kind", "one_line", "warn_line", "check_ranking", "check_row_count",
@@ -161,7 +163,7 @@ def whole_number(minimum: int, *, or_zero: bool = False):
         try:
             value = int(text)
         except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+            raise argparse.ArgumentTypeError(f"{plain(text)!r} is not a whole number") from None
         if value < minimum and not (or_zero and value == 0):
             extra = " (or 0)" if or_zero else ""
             raise argparse.ArgumentTypeError(f"must be at least {minimum}{extra}; got {value}")

@@ -15,6 +15,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
@@ -35,7 +36,7 @@ def _finite_number(text: str) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+        raise argparse.ArgumentTypeError(f"{plain(text)!r} is not a number") from None
     if not math.isfinite(value):
         raise argparse.ArgumentTypeError(f"must be finite; got {text}")
     return value
@@ -65,6 +66,7 @@ def cutoff_summary(
     n_resamples: int = 200,
     confidence_level: float = 0.95,
     seed: int | None = 0,
+    guarantee: dict[str, Any] | None = None,
 ) -> dict[str, Any]:
     """Everything ``probwrap cutoff`` reports, as a JSON-ready dictionary.
 
@@ -82,6 +84,10 @@ def cutoff_summary(
     n_resamples, confidence_level, seed
         Bootstrap settings of :func:`probwrap.decision.cutoff_interval` (``n_resamples=0``:
         no interval).
+    guarantee : dict, optional
+        Keyword arguments of :func:`probwrap.decision.guaranteed_cutoff` (``requirement``,
+        ``target``, ``confidence``, ``method``): adds the least-cost cutoff certified to meet
+        that requirement under ``"guarantee"``.
 
     Returns
     -------
@@ -140,6 +146,24 @@ def cutoff_summary(
             share = float(action.mean())
             over = capacity is not None and share > capacity
             out[name] = None if over else float(np.mean(matrix[y, action]))
+    if guarantee is not None:
+        from probwrap.decision import guaranteed_cutoff
+
+        g = guaranteed_cutoff(scores, y, matrix, capacity=capacity, score_bounds=bounds,
+                              **guarantee)
+        out["guarantee"] = {
+            "requirement": g.requirement,
+            "target": g.target,
+            "method": g.method,
+            "confidence": g.confidence,
+            "cutoff": g.cutoff,
+            "expected_cost": g.cost,
+            "flagged_share": float(np.mean(scores > g.cutoff)),
+            "achieved": g.achieved,
+            "bound": g.bound,
+            "p_value": None if math.isnan(g.p_value) else g.p_value,
+            "moved_the_cutoff": g.binding,
+        }
     return out
 
 
@@ -162,6 +186,20 @@ def _text(out: dict[str, Any], path: str) -> str:
     ]
     if out["cost_flag_all"] is not None:
         lines.append(f"  acting on every row   {out['cost_flag_all']:.6g}")
+    g = out.get("guarantee")
+    if g is not None:
+        side = ">=" if g["requirement"] in ("recall", "precision") else "<="
+        how = (f"with probability {g['confidence']:g}, p = {g['p_value']:.3g}"
+               if g["method"] == "high_probability" else "on average over held-out sets")
+        lines += [
+            f"  with the guarantee    {g['requirement'].replace('_', ' ')} {side} {g['target']:g} "
+            f"({how})",
+            f"    cutoff              {g['cutoff']:.6g}"
+            + ("" if g["moved_the_cutoff"] else "   (the same rule as without it)"),
+            f"    expected cost/row   {g['expected_cost']:.6g}",
+            f"    on these rows       {g['achieved']:.4g}; guaranteed {side} {g['bound']:.4g}",
+            f"    share flagged       {g['flagged_share']:.4g}",
+        ]
     if out["score_scale"] == "proba":
         bayes = out["bayes_cutoff"]
 
@@ -175,6 +213,19 @@ def _text(out: dict[str, Any], path: str) -> str:
                 "(right for calibrated probabilities)"
             )
     return "\n".join(lines)
+
+
+def _guarantee_args(args: argparse.Namespace) -> dict[str, Any] | None:
+    if args.guarantee is None:
+        if args.guarantee_target is not None:
+            raise DataError("--guarantee-target needs --guarantee (which metric).")
+        return None
+    if args.guarantee_target is None:
+        raise DataError(
+            f"--guarantee {args.guarantee} needs --guarantee-target (e.g. 0.9)."
+        )
+    return {"requirement": args.guarantee, "target": args.guarantee_target,
+            "confidence": args.guarantee_confidence, "method": args.guarantee_method}
 
 
 def _run(args: argparse.Namespace) -> int:
@@ -195,7 +246,7 @@ def _run(args: argparse.Namespace) -> int:
                 out = cutoff_summary(
                     scores, y, costs, scale=args.scale, capacity=args.capacity,
                     n_resamples=args.resamples, confidence_level=args.confidence,
-                    seed=args.seed,
+                    seed=args.seed, guarantee=_guarantee_args(args),
                 )
             except ValueError as exc:
                 raise DataError(f"{args.scores}: {exc}") from None
@@ -242,5 +293,26 @@ def register(subparsers: Any) -> None:
         help="coverage of the interval (default 0.95)",
     )
     parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
+    parser.add_argument(
+        "--guarantee", default=None,
+        choices=["recall", "precision", "false_positive_rate", "flagged_share"],
+        help="also find the least-cost cutoff certified to keep this metric at or above "
+        "(recall, precision) or at or below (false_positive_rate, flagged_share) "
+        "--guarantee-target on new rows",
+    )
+    parser.add_argument(
+        "--guarantee-target", type=_level, default=None, metavar="X",
+        help="the floor or ceiling of --guarantee, e.g. 0.9",
+    )
+    parser.add_argument(
+        "--guarantee-confidence", type=_level, default=0.9, metavar="LEVEL",
+        help="probability that the guarantee holds (default 0.9)",
+    )
+    parser.add_argument(
+        "--guarantee-method", default="high_probability",
+        choices=["high_probability", "expectation"],
+        help="high_probability (default): holds with --guarantee-confidence; expectation: "
+        "holds on average (not for precision)",
+    )
     add_format_flag(parser)
     parser.set_defaults(func=_run)

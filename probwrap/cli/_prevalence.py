@@ -23,6 +23,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
@@ -43,7 +44,7 @@ def _prevalence(text: str) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+        raise argparse.ArgumentTypeError(f"{plain(text)!r} is not a number") from None
     if not 0.0 < value < 1.0:
         raise argparse.ArgumentTypeError(f"must be a share strictly between 0 and 1; got {text}")
     return value

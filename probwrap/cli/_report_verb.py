@@ -9,6 +9,7 @@ import warnings
 
 import numpy as np
 
+from .._validation import plain
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     MIN_RESAMPLES,
@@ -38,7 +39,7 @@ def _finite(text: str) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+        raise argparse.ArgumentTypeError(f"{plain(text)!r} is not a number") from None
     if not math.isfinite(value):
         raise argparse.ArgumentTypeError(f"must be a finite number; got {text}")
     return value
@@ -123,10 +124,10 @@ def _cost_matrix(text: str, parser: argparse.ArgumentParser) -> np.ndarray:
         matrix = np.array(rows, dtype=float)
     except ValueError:
         parser.error(f"--cost-matrix must be numbers, rows separated by ';' and entries by ',' "
-                     f"(e.g. '0,4,12;20,4,12'); got {text!r}")
+                     f"(e.g. '0,4,12;20,4,12'); got {plain(text)!r}")
     if matrix.ndim != 2 or not np.all(np.isfinite(matrix)):
         parser.error(f"--cost-matrix rows must all have the same number of finite entries; got "
-                     f"{text!r}")
+                     f"{plain(text)!r}")
     return matrix
 
 
@@ -356,7 +357,8 @@ def _handler(args: argparse.Namespace) -> int:
         content = _build_and_write(
             args, stages, y_true=y, y_prob=p, costs=costs, capacity=args.capacity,
             unlabelled_prob=q, batch_size=args.batch_size,
-            class_names=[str(v) for v in labels], **extra,
+            class_names=None if [str(v) for v in labels] == ["0", "1"] else [
+                str(v) for v in labels], **extra,
         )
     summary = {"out": args.out, "n_rows": int(content.n_rows),
                "labels": {"negative": labels[0], "positive": labels[1]}}

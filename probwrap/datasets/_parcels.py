@@ -9,6 +9,8 @@ import numpy as np
 from scipy.special import expit, softmax
 from sklearn.utils import Bunch, check_random_state
 
+from .._validation import plain
+
 __all__ = [
     "PARCEL_FEATURES",
     "ROUTING_ACTIONS",
@@ -97,7 +99,7 @@ def parcel_source_prior(n_outcomes: int = 2) -> np.ndarray:
     True
     """
     if n_outcomes not in _OUTCOMES:
-        raise ValueError(f"`n_outcomes` must be 2 or 3; got {n_outcomes!r}.")
+        raise ValueError(f"`n_outcomes` must be 2 or 3; got {plain(n_outcomes)!r}.")
     return np.asarray(_source_prior(n_outcomes))
 
 
@@ -150,11 +152,11 @@ def make_parcels(
     True
     """
     if n_outcomes not in _OUTCOMES:
-        raise ValueError(f"`n_outcomes` must be 2 or 3; got {n_outcomes!r}.")
+        raise ValueError(f"`n_outcomes` must be 2 or 3; got {plain(n_outcomes)!r}.")
     if season not in ("summer", "winter"):
-        raise ValueError(f"`season` must be 'summer' or 'winter'; got {season!r}.")
+        raise ValueError(f"`season` must be 'summer' or 'winter'; got {plain(season)!r}.")
     if int(n_samples) != n_samples or n_samples < 1:
-        raise ValueError(f"`n_samples` must be a positive integer; got {n_samples!r}.")
+        raise ValueError(f"`n_samples` must be a positive integer; got {plain(n_samples)!r}.")
     n_samples = int(n_samples)
     rng = check_random_state(random_state)
     source = parcel_source_prior(n_outcomes)
@@ -162,7 +164,7 @@ def make_parcels(
         if n_outcomes != 2:
             raise ValueError("`prevalence` is only available with n_outcomes=2.")
         if not 0.0 < prevalence < 1.0:
-            raise ValueError(f"`prevalence` must be in (0, 1); got {prevalence!r}.")
+            raise ValueError(f"`prevalence` must be in (0, 1); got {plain(prevalence)!r}.")
         target_prior = np.array([1.0 - prevalence, prevalence])
     elif season == "winter":
         target_prior = source.copy()

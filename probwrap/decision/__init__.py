@@ -24,6 +24,13 @@ from ._cutoff import (
     cutoff_interval,
     search_cutoff,
 )
+from ._guarantee import (
+    GUARANTEE_REQUIREMENTS,
+    GuaranteedCutoff,
+    GuaranteeUnreachableError,
+    binomial_tail_pvalue,
+    guaranteed_cutoff,
+)
 from ._offsets import (
     ClassOffsetResult,
     OffsetCurve,
@@ -35,16 +42,20 @@ from ._scorer import make_cost_scorer, realised_cost
 
 __all__ = [
     "BINARY_COST_KEYS",
+    "GUARANTEE_REQUIREMENTS",
     "ActionBudget",
     "ClassOffsetResult",
     "CutoffInterval",
     "CutoffSearchResult",
+    "GuaranteeUnreachableError",
+    "GuaranteedCutoff",
     "OffsetCurve",
     "action_savings",
     "add_reject_action",
     "apply_class_offsets",
     "bayes_actions",
     "binary_cost_matrix",
+    "binomial_tail_pvalue",
     "budget_actions",
     "capacity_cutoff",
     "check_capacity",
@@ -54,6 +65,7 @@ __all__ = [
     "cutoff_interval",
     "expected_costs",
     "fit_action_budget",
+    "guaranteed_cutoff",
     "make_cost_scorer",
     "plugin_cutoff",
     "realised_cost",

@@ -64,9 +64,9 @@ def binary_cost_matrix(costs: Mapping[str, float], *, name: str = "costs") -> np
         try:
             value = float(value)
         except (TypeError, ValueError) as exc:
-            raise ValueError(f"`{name}[{key!r}]` must be a number; got {plain(value)!r}.") from exc
+            raise ValueError(f"`{name}[{plain(key)!r}]` must be a number; got {plain(value)!r}.") from exc
         if not np.isfinite(value):
-            raise ValueError(f"`{name}[{key!r}]` must be finite; got {plain(value)!r}.")
+            raise ValueError(f"`{name}[{plain(key)!r}]` must be finite; got {plain(value)!r}.")
         values[key] = value
     return np.array([[values["tn"], values["fp"]], [values["fn"], values["tp"]]], dtype=float)
 

@@ -12,7 +12,7 @@ from typing import Any
 import numpy as np
 from sklearn.utils import check_random_state
 
-from .._validation import check_same_length, check_sample_weight
+from .._validation import check_same_length, check_sample_weight, plain
 
 __all__ = ["BootstrapResult", "ConfidenceInterval", "bootstrap_interval"]
 
@@ -154,21 +154,21 @@ def bootstrap_interval(
     True
     """
     if not callable(metric):
-        raise ValueError(f"`metric` must be callable; got {metric!r}.")
+        raise ValueError(f"`metric` must be callable; got {plain(metric)!r}.")
     if (
         isinstance(n_resamples, bool)
         or not isinstance(n_resamples, numbers.Integral)
         or n_resamples < 2
     ):
-        raise ValueError(f"`n_resamples` must be a whole number >= 2; got {n_resamples!r}.")
+        raise ValueError(f"`n_resamples` must be a whole number >= 2; got {plain(n_resamples)!r}.")
     if (
         isinstance(confidence_level, bool)
         or not isinstance(confidence_level, numbers.Real)
         or not 0.0 < confidence_level < 1.0
     ):
-        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {plain(confidence_level)!r}.")
     if method not in _METHODS:
-        raise ValueError(f"`method` must be one of {list(_METHODS)}; got {method!r}.")
+        raise ValueError(f"`method` must be one of {list(_METHODS)}; got {plain(method)!r}.")
     y_arr = np.asarray(y_true)
     p_arr = np.asarray(y_prob)
     n = check_same_length(("y_true", y_arr), ("y_prob", p_arr))
@@ -179,7 +179,7 @@ def bootstrap_interval(
     if statistic.ndim > 1 or not np.all(np.isfinite(statistic)):
         raise ValueError(
             "`metric` must return a finite number or 1-d array of finite numbers; got "
-            f"{statistic!r}."
+            f"{plain(statistic)!r}."
         )
     copy_rows = not _weights_act_as_copies(metric, y_arr, p_arr, base_w, n, metric_kwargs)
     if copy_rows:
@@ -211,7 +211,7 @@ def bootstrap_interval(
             continue
         if value.shape != statistic.shape or not np.all(np.isfinite(value)):
             ok[r] = False
-            first_error = first_error or f"non-finite or mis-shaped value {value!r}"
+            first_error = first_error or f"non-finite or mis-shaped value {plain(value)!r}"
             continue
         dist[r] = value
     n_failed = int(np.count_nonzero(~ok))

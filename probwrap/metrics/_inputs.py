@@ -86,7 +86,7 @@ def binary_targets(y_true: Any, labels: Any = None) -> np.ndarray:
         if arr.dtype.kind in "biuf" and value in (0, 1):
             return (arr == 1).astype(float)
         raise ValueError(
-            f"`y_true` holds the single label {value!r}; it cannot tell which class is positive. "
+            f"`y_true` holds the single label {plain(value)!r}; it cannot tell which class is positive. "
             "Pass labels=[negative, positive]."
         )
     y01, _ = check_binary_labels(arr, name="y_true")
@@ -172,7 +172,7 @@ def check_n_bins(n_bins: Any, name: str = "n_bins") -> int:
 
 def check_strategy(strategy: Any) -> str:
     if strategy not in STRATEGIES:
-        raise ValueError(f"`strategy` must be one of {list(STRATEGIES)}; got {strategy!r}.")
+        raise ValueError(f"`strategy` must be one of {list(STRATEGIES)}; got {plain(strategy)!r}.")
     return str(strategy)
 
 

@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_same_length, check_sample_weight
+from .._validation import check_same_length, check_sample_weight, plain
 from ._inputs import binary_targets, prepare_any, prepare_binary, warn_floored
 
 __all__ = ["log_loss", "brier_score", "net_benefit", "net_benefit_treat_all"]
@@ -60,7 +60,7 @@ def log_loss(
     0.4581
     """
     if not (isinstance(clip, (int, float)) and 0.0 < clip < 0.5):
-        raise ValueError(f"`clip` must be a number in (0, 0.5); got {clip!r}.")
+        raise ValueError(f"`clip` must be a number in (0, 0.5); got {plain(clip)!r}.")
     y, p, w = prepare_any(y_true, y_prob, sample_weight, labels)
     if p.ndim == 1:
         p_obs = np.where(y == 1.0, p, 1.0 - p)

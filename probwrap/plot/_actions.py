@@ -6,6 +6,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ._style import PALETTE, new_axes, style_axes
 
 __all__ = ["ActionShareDisplay"]
@@ -74,7 +75,7 @@ class ActionShareDisplay:
             raise ValueError(f"`mean_cost` must have one value per rule ({len(rules)}); got "
                              f"shape {c.shape}.")
         if capacity is not None and not 0 <= int(capacity[0]) < len(acts):
-            raise ValueError(f"`capacity` names action index {capacity[0]!r}, not among "
+            raise ValueError(f"`capacity` names action index {plain(capacity[0])!r}, not among "
                              f"0..{len(acts) - 1}.")
         self.shares = s
         self.mean_cost = c

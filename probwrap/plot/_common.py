@@ -6,6 +6,8 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
+
 __all__ = ["positive_proba", "binary_labels", "class_proba"]
 
 
@@ -55,7 +57,7 @@ def binary_labels(y: Any, classes: Any = None, *, name: str = "y") -> np.ndarray
         if classes.shape[0] == 1:
             if classes[0] in (0, 1, True, False):
                 return (arr == 1).astype(float)
-            raise ValueError(f"`{name}` holds a single class {classes[0]!r}; cannot tell which is positive.")
+            raise ValueError(f"`{name}` holds a single class {plain(classes[0])!r}; cannot tell which is positive.")
     classes = np.asarray(classes)
     unknown = ~np.isin(arr, classes)
     if unknown.any():

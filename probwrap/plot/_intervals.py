@@ -3,11 +3,14 @@
 from __future__ import annotations
 
 import numbers
+import warnings
 from typing import Any
 
 import numpy as np
 from scipy.stats import norm
 from sklearn.utils import check_random_state
+
+from .._validation import plain
 
 __all__ = ["wilson_interval", "consistency_band"]
 
@@ -18,7 +21,7 @@ def _check_level(confidence_level: Any) -> float:
         or not isinstance(confidence_level, numbers.Real)
         or not 0.0 < float(confidence_level) < 1.0
     ):
-        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {plain(confidence_level)!r}.")
     return float(confidence_level)
 
 
@@ -74,6 +77,29 @@ def wilson_interval(
     return np.clip(low, 0.0, 1.0), np.clip(high, 0.0, 1.0)
 
 
+def _frequencies(sample_weight: Any, n: int) -> np.ndarray:
+    """Weights as row frequencies (see :func:`consistency_band`)."""
+    from ..calibration._base import WeightScaleWarning, count_weights
+
+    w = np.asarray(sample_weight, dtype=float)
+    if w.shape != (n,):
+        raise ValueError(f"`sample_weight` must have shape ({n},); got {w.shape}.")
+    if not np.all(np.isfinite(w)) or np.any(w < 0):
+        raise ValueError("`sample_weight` must be finite and non-negative.")
+    if float(w.max(initial=0.0)) >= 2.0**62:
+        raise ValueError("`sample_weight` must be below 2**62: each weight counts the rows a "
+                         "row stands for, and the band simulates that many outcomes.")
+    w, rescaled = count_weights(w)
+    if rescaled:
+        warnings.warn(
+            "`sample_weight` sums to less than the number of rows it weights, so it cannot be "
+            "row frequencies; it was rescaled to sum to Kish's effective sample size "
+            "(equal weights become 1 each) for the consistency band.",
+            WeightScaleWarning, stacklevel=3,
+        )
+    return w
+
+
 def consistency_band(
     y_prob: Any,
     bin_index: Any,
@@ -100,7 +126,12 @@ def consistency_band(
     n_bins : int
         Number of bins.
     sample_weight : array-like of shape (n,), optional
-        Row weights (the simulated frequency is the weighted share of simulated positives).
+        Row frequencies: a row of weight 2 counts as two identical rows, each with its own
+        simulated outcome (weight ``m + f``, ``m`` whole and ``0 <= f < 1``: a binomial draw of
+        ``m`` outcomes plus one outcome weighing ``f``). Weights that sum to less than the
+        number of rows they weight cannot be frequencies: they are rescaled to sum to Kish's
+        effective sample size (equal weights become 1 each), with a
+        :class:`~probwrap.calibration.WeightScaleWarning`.
     confidence_level : float, default=0.95
     n_draws : int, default=1000
         Simulated outcome vectors.
@@ -130,18 +161,25 @@ def consistency_band(
     if not np.all((p >= 0) & (p <= 1)):
         raise ValueError("`y_prob` must hold probabilities in [0, 1].")
     if isinstance(n_draws, bool) or not isinstance(n_draws, numbers.Integral) or n_draws < 2:
-        raise ValueError(f"`n_draws` must be a whole number >= 2; got {n_draws!r}.")
+        raise ValueError(f"`n_draws` must be a whole number >= 2; got {plain(n_draws)!r}.")
     idx = idx.astype(np.intp)
     if idx.size and (idx.min() < 0 or idx.max() >= n_bins):
         raise ValueError(f"`bin_index` must lie in [0, {n_bins}).")
-    w = np.ones_like(p) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    w = np.ones_like(p) if sample_weight is None else _frequencies(sample_weight, p.shape[0])
     rng = check_random_state(random_state)
     weight = np.bincount(idx, weights=w, minlength=n_bins)
+    # a row of weight m + f: m outcomes of its own (one binomial draw) and one weighing f
+    whole = np.floor(w)
+    part = w - whole
+    has_part = bool(np.any(part > 0))
+    whole = whole.astype(np.int64)
     freq = np.empty((int(n_draws), n_bins))
     for d in range(int(n_draws)):
-        hits = rng.uniform(size=p.shape[0]) < p
+        hits = rng.binomial(whole, p).astype(float)
+        if has_part:
+            hits += part * (rng.uniform(size=p.shape[0]) < p)
         with np.errstate(invalid="ignore", divide="ignore"):
-            freq[d] = np.bincount(idx, weights=w * hits, minlength=n_bins) / weight
+            freq[d] = np.bincount(idx, weights=hits, minlength=n_bins) / weight
     alpha = 1.0 - level
     low, high = np.quantile(freq, [alpha / 2.0, 1.0 - alpha / 2.0], axis=0)
     empty = weight <= 0

@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+import warnings
 from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ..shift import prior_by_batch
 from ._style import PALETTE, new_axes, style_axes
 
@@ -80,7 +82,7 @@ class PrevalenceDriftDisplay:
             )
         k = table["prior"].shape[1]
         if not 0 <= int(class_index) < k:
-            raise ValueError(f"`class_index` must lie in [0, {k}); got {class_index!r}.")
+            raise ValueError(f"`class_index` must lie in [0, {k}); got {plain(class_index)!r}.")
         self.table = table
         self.class_index = int(class_index)
         self.source_prevalence = None if source_prevalence is None else float(source_prevalence)
@@ -209,7 +211,9 @@ class ClassPriorDisplay:
     target_prior : array-like of shape (k,)
         Estimated class shares of the unlabelled rows.
     interval : array-like of shape (k, 2), optional
-        Lower and upper end of each estimated share.
+        Lower and upper end of each estimated share, drawn as given (from low to high). An
+        interval need not contain its estimate (a bootstrap percentile interval of a skewed
+        estimator may not); such a class is named in a ``UserWarning``, never clipped.
     class_names : sequence of str, optional
     shift_pvalue : float, optional
         p-value of the shift test, shown in the title.
@@ -220,7 +224,7 @@ class ClassPriorDisplay:
     source_bars_, target_bars_ : BarContainer
         Bar heights are the shares.
     interval_artist_ : ErrorbarContainer or None
-        Around the target bars.
+        Beside the target bars: each spans exactly from the low to the high end.
 
     Examples
     --------
@@ -253,6 +257,10 @@ class ClassPriorDisplay:
         iv = None if interval is None else np.asarray(interval, dtype=float)
         if iv is not None and iv.shape != (k, 2):
             raise ValueError(f"`interval` must have shape ({k}, 2); got {iv.shape}.")
+        if iv is not None and not np.all(iv[:, 0] <= iv[:, 1]):
+            j = int(np.flatnonzero(~(iv[:, 0] <= iv[:, 1]))[0])
+            raise ValueError(f"`interval` row {j} must have low <= high (finite); got "
+                             f"[{float(iv[j, 0])}, {float(iv[j, 1])}].")
         names = [str(j) for j in range(k)] if class_names is None else [str(c) for c in
                                                                        class_names]
         if len(names) != k:
@@ -261,6 +269,15 @@ class ClassPriorDisplay:
         self.target_prior = tgt
         self.interval = iv
         self.class_names = names
+        if iv is not None:
+            outside = np.flatnonzero((tgt < iv[:, 0]) | (tgt > iv[:, 1]))
+            if outside.size:
+                said = "; ".join(f"{names[j]}: {float(tgt[j]):.4g} outside "
+                                 f"[{float(iv[j, 0]):.4g}, {float(iv[j, 1]):.4g}]"
+                                 for j in outside)
+                warnings.warn(f"The estimated share lies outside its interval for "
+                              f"{outside.size} class(es) ({said}); the intervals are drawn as "
+                              "given.", UserWarning, stacklevel=2)
         self.shift_pvalue = shift_pvalue
 
     def plot(self, ax: Any = None) -> ClassPriorDisplay:
@@ -274,10 +291,11 @@ class ClassPriorDisplay:
                                    color=PALETTE["shifted"], label="estimated (unlabelled rows)")
         self.interval_artist_ = None
         if self.interval is not None:
-            yerr = np.vstack([self.target_prior - self.interval[:, 0],
-                              self.interval[:, 1] - self.target_prior])
+            # drawn about the interval's own midpoint, so it spans exactly [low, high] whether
+            # or not the estimate lies inside it (error bars can never be negative)
+            low, high = self.interval[:, 0], self.interval[:, 1]
             self.interval_artist_ = ax.errorbar(
-                x + 0.2, self.target_prior, yerr=np.maximum(yerr, 0.0), fmt="none",
+                x + 0.2, (low + high) / 2.0, yerr=(high - low) / 2.0, fmt="none",
                 ecolor=PALETTE["ink"], elinewidth=1.1, capsize=3, label="interval",
             )
         ax.set_xticks(x, self.class_names, fontsize=8)

@@ -6,6 +6,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ..metrics import expected_calibration_error, reliability_table
 from ._common import binary_labels, class_proba, estimator_classes
 from ._intervals import consistency_band, wilson_interval
@@ -164,7 +165,7 @@ class ReliabilityDiagram:
         ReliabilityDiagram
         """
         if band not in _BANDS:
-            raise ValueError(f"`band` must be one of {_BANDS}; got {band!r}.")
+            raise ValueError(f"`band` must be one of {_BANDS}; got {plain(band)!r}.")
         y_arr = np.asarray(y_true)
         p = np.asarray(y_prob, dtype=float)
         if p.ndim == 2:
@@ -227,7 +228,7 @@ class ReliabilityDiagram:
         else:
             if not (isinstance(class_index, (int, np.integer)) and 0 <= class_index < k):
                 raise ValueError(
-                    f"`class_index` must be a column index in [0, {k}); got {class_index!r}."
+                    f"`class_index` must be a column index in [0, {k}); got {plain(class_index)!r}."
                 )
             # validates the labels and the probabilities once, for the whole matrix
             reliability_table(y_arr, p, n_bins=1, sample_weight=sample_weight, labels=labels)

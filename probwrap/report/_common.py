@@ -13,6 +13,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ..metrics import bootstrap_interval
 
 __all__ = [
@@ -193,7 +194,7 @@ def class_index(y: Any, classes: np.ndarray, name: str) -> np.ndarray:
     unknown = ~np.isin(arr, classes)
     if unknown.any():
         row = int(np.flatnonzero(unknown)[0])
-        raise ValueError(f"`{name}` row {row} holds {arr[row]!r}, not among the classes "
+        raise ValueError(f"`{name}` row {row} holds {plain(arr[row])!r}, not among the classes "
                          f"{classes.tolist()}.")
     order = np.argsort(classes, kind="stable")
     return order[np.searchsorted(classes[order], arr)].astype(np.intp)

@@ -12,6 +12,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ..decision import (
     check_capacity,
     check_cost_matrix,
@@ -137,8 +138,8 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes) -> list[Metric
 
 
 def _is_zero_one(labels: Any) -> bool:
-    plain = [v.item() if hasattr(v, "item") else v for v in labels]
-    return all(isinstance(v, (bool, int, float)) and v in (0, 1) for v in plain)
+    values = [v.item() if hasattr(v, "item") else v for v in labels]
+    return all(isinstance(v, (bool, int, float)) and v in (0, 1) for v in values)
 
 
 def _binary_truth(y_true: Any, class_names: Any) -> tuple[np.ndarray, Any]:
@@ -165,7 +166,7 @@ def _binary_truth(y_true: Any, class_names: Any) -> tuple[np.ndarray, Any]:
     raise ValueError(
         f"`y_true` holds the labels {pair}, not 0/1; say which is the positive class (the class "
         f"`y_prob` is the probability of) with class_names=(negative, positive), e.g. "
-        f"class_names={example!r}."
+        f"class_names={plain(example)!r}."
     )
 
 

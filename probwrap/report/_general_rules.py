@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import power_of_two_unit
+from .._validation import plain, power_of_two_unit
 from ..decision import (
     bayes_actions,
     budget_actions,
@@ -79,7 +79,7 @@ def resolve_capacity(capacity: Any, names: tuple[str, ...]) -> tuple[int, float]
                              f"{dict(capacity)!r}.")
         ((label, share),) = capacity.items()
         if str(label) not in names:
-            raise ValueError(f"`capacity` names action {label!r}, which is not among the "
+            raise ValueError(f"`capacity` names action {plain(label)!r}, which is not among the "
                              f"actions {list(names)}.")
         return names.index(str(label)), float(check_capacity(share))
     if len(names) != 2:

@@ -8,6 +8,8 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
+
 __all__ = ["nice_ticks", "format_ticks", "data_to_pixel", "pixel_to_data"]
 
 
@@ -37,7 +39,7 @@ def nice_ticks(low: float, high: float, target: int = 5) -> np.ndarray:
     """
     low, high = float(low), float(high)
     if not (math.isfinite(low) and math.isfinite(high)) or high <= low:
-        raise ValueError(f"nice_ticks needs finite low < high; got {low!r}, {high!r}.")
+        raise ValueError(f"nice_ticks needs finite low < high; got {plain(low)!r}, {plain(high)!r}.")
     raw = (high - low) / max(int(target), 1)
     power = 10.0 ** math.floor(math.log10(raw))
     step = next(m * power for m in (1.0, 2.0, 2.5, 5.0, 10.0) if m * power >= raw * (1 - 1e-9))

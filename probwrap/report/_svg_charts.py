@@ -23,6 +23,7 @@ from xml.sax.saxutils import escape, quoteattr
 
 import numpy as np
 
+from .._validation import plain
 from ._svg_axes import data_to_pixel, format_ticks, nice_ticks
 
 __all__ = ["Chart", "Panel"]
@@ -167,7 +168,7 @@ class Panel:
         """Show a legend of the labelled series: ``"upper left"``, ``"upper right"``,
         ``"lower left"`` or ``"lower right"``."""
         if loc not in ("upper left", "upper right", "lower left", "lower right"):
-            raise ValueError(f"unknown legend location {loc!r}.")
+            raise ValueError(f"unknown legend location {plain(loc)!r}.")
         self.legend_loc = loc
         return self
 
@@ -205,7 +206,7 @@ class Chart:
     def __init__(self, key: str, *, title: str, width: int = 560, height: int = 400,
                  description: str | None = None) -> None:
         if not _KEY.match(key):
-            raise ValueError(f"`key` must be a letter followed by [A-Za-z0-9_-]; got {key!r}.")
+            raise ValueError(f"`key` must be a letter followed by [A-Za-z0-9_-]; got {plain(key)!r}.")
         self.key = key
         self.title = str(title)
         self.width = int(width)

@@ -9,6 +9,7 @@ prior estimators accept through their ``sample_weight``.
 The core of this module needs only NumPy; Dask is imported only when Dask input is given.
 """
 
+from .._validation import plain
 from ._build import tally_scores
 from ._tally import DEFAULT_RESOLUTION, ScoreTally, merge_tallies
 
@@ -44,7 +45,7 @@ def tally_model(estimator, X, y=None, *, sample_weight=None, response="predict_p
         raise ValueError(f"`X` must be a Dask array or DataFrame; got {type(X).__name__}.")
     if response not in ("predict_proba", "decision_function"):
         raise ValueError(
-            f"`response` must be 'predict_proba' or 'decision_function'; got {response!r}."
+            f"`response` must be 'predict_proba' or 'decision_function'; got {plain(response)!r}."
         )
     if len(getattr(estimator, "classes_", ())) != 2:
         raise ValueError("`estimator` must be a fitted binary classifier (two classes_).")

@@ -12,6 +12,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ._tally import ScoreTally
 
 __all__ = ["tally_cutoff_interval", "tally_prior_interval"]
@@ -62,7 +63,7 @@ def tally_cutoff_interval(
     if tally.n_replicates < 1:
         raise ValueError("`tally` carries no bootstrap replicates; tally with n_replicates > 0.")
     if not 0.0 < float(confidence_level) < 1.0:
-        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {plain(confidence_level)!r}.")
     proba, y, _ = tally.to_rows(proba=True)
     p = proba[:, 1]
     reps = tally.replicate_row_weights()

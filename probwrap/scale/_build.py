@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_same_length, check_sample_weight, check_scores
+from .._validation import check_same_length, check_sample_weight, check_scores, plain
 from ._tally import (
     DEFAULT_RESOLUTION,
     ScoreTally,
@@ -92,7 +92,7 @@ def tally_scores(
     if y is None and n_labels != 1:
         raise ValueError(f"`n_labels` must be 1 without `y`; got {n_labels}.")
     if not (isinstance(chunk_size, numbers.Integral) and chunk_size >= 1):
-        raise ValueError(f"`chunk_size` must be a positive integer; got {chunk_size!r}.")
+        raise ValueError(f"`chunk_size` must be a positive integer; got {plain(chunk_size)!r}.")
     n_rep = _check_n_replicates(n_replicates)
     seed = replicate_seed(random_state) if n_rep else 0
     if any(_is_dask(v) for v in (scores, y, sample_weight)):

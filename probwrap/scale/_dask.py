@@ -11,6 +11,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ._tally import (
     DEFAULT_RESOLUTION,
     ScoreTally,
@@ -248,7 +249,7 @@ def owner_resolution(owner: Any) -> float:
         return _check_resolution(value)
     except ValueError:
         raise ValueError(
-            f"`tally_resolution` must be a positive finite number; got {value!r}."
+            f"`tally_resolution` must be a positive finite number; got {plain(value)!r}."
         ) from None
 
 
@@ -418,7 +419,7 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
     if batch_size is not None:
         if lengths is None or any(c != batch_size for c in lengths[:-1]) or lengths[-1] > batch_size:
             raise ValueError(
-                f"`batch_size`={batch_size!r} does not match the Dask blocks (lengths "
+                f"`batch_size`={plain(batch_size)!r} does not match the Dask blocks (lengths "
                 f"{lengths if lengths is None else lengths[:5]}...); batches are the blocks, so "
                 "rechunk X to batch_size rows or leave batch_size=None."
             )

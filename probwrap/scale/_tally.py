@@ -22,7 +22,7 @@ from typing import Any
 import numpy as np
 from scipy.special import expit
 
-from .._validation import check_same_length, check_scores
+from .._validation import check_same_length, check_scores, plain
 
 __all__ = ["DEFAULT_RESOLUTION", "ScoreTally", "merge_tallies"]
 
@@ -42,7 +42,7 @@ def _check_resolution(resolution: Any) -> float:
         or not np.isfinite(resolution)
         or resolution <= 0
     ):
-        raise ValueError(f"`resolution` must be a positive finite number; got {resolution!r}.")
+        raise ValueError(f"`resolution` must be a positive finite number; got {plain(resolution)!r}.")
     return float(resolution)
 
 
@@ -53,7 +53,7 @@ def _check_n_replicates(n_replicates: Any) -> int:
         or n_replicates < 0
     ):
         raise ValueError(
-            f"`n_replicates` must be a non-negative integer; got {n_replicates!r}."
+            f"`n_replicates` must be a non-negative integer; got {plain(n_replicates)!r}."
         )
     return int(n_replicates)
 
@@ -74,7 +74,7 @@ def _check_n_labels(n_labels: Any) -> int:
         or not isinstance(n_labels, numbers.Integral)
         or n_labels < 1
     ):
-        raise ValueError(f"`n_labels` must be a positive integer; got {n_labels!r}.")
+        raise ValueError(f"`n_labels` must be a positive integer; got {plain(n_labels)!r}.")
     return int(n_labels)
 
 
@@ -248,7 +248,7 @@ class ScoreTally:
             return counts
         if not (isinstance(positive, numbers.Integral) and 0 <= positive < self.n_labels):
             raise ValueError(
-                f"`positive` must be a label index in 0..{self.n_labels - 1}; got {positive!r}."
+                f"`positive` must be a label index in 0..{self.n_labels - 1}; got {plain(positive)!r}."
             )
         pos = counts[..., positive]
         rest = np.maximum(counts.sum(axis=-1) - pos, 0.0)
@@ -290,8 +290,8 @@ class ScoreTally:
             raise ValueError(f"`other` must be a ScoreTally; got {type(other).__name__}.")
         if other.resolution != self.resolution:
             raise ValueError(
-                f"Tallies with different resolutions cannot be merged ({self.resolution!r} and "
-                f"{other.resolution!r})."
+                f"Tallies with different resolutions cannot be merged ({plain(self.resolution)!r} and "
+                f"{plain(other.resolution)!r})."
             )
         if other.n_labels != self.n_labels or other.labelled != self.labelled:
             raise ValueError(
@@ -335,7 +335,7 @@ class ScoreTally:
         kind = f"{self.n_labels} labels" if self.labelled else "unlabelled"
         return (
             f"ScoreTally({self.n_rows} rows, {self.n_bins} bins, {kind}, "
-            f"resolution={self.resolution!r})"
+            f"resolution={plain(self.resolution)!r})"
         )
 
 
@@ -401,7 +401,7 @@ def _tally_block(
     if np.max(np.abs(scaled)) >= _MAX_INDEX:
         raise ValueError(
             f"`scores` reach {np.max(np.abs(s)):.3g}, too far out for bins of width "
-            f"{resolution!r}; use a coarser `resolution`."
+            f"{plain(resolution)!r}; use a coarser `resolution`."
         )
     b = np.floor(scaled + 0.5).astype(np.int64)
     lo, hi = int(b.min()), int(b.max())

@@ -5,6 +5,7 @@ about scikit-learn estimators. :class:`probwrap.PriorShiftWrapper` is the estima
 """
 
 from ._adjust import adjust_to_prior, check_prior, project_to_simplex, shift_cutoff
+from ._alarms import CusumResult, cusum_alarms, cusum_run_length
 from ._calibration import BiasCorrectedScaling
 from ._estimate import (
     BoundaryPriorWarning,
@@ -27,6 +28,9 @@ __all__ = [
     "BiasCorrectedScaling",
     "BoundaryPriorWarning",
     "CALIBRATIONS",
+    "CusumResult",
+    "cusum_alarms",
+    "cusum_run_length",
     "INTERVALS",
     "PriorNotIdentifiedWarning",
     "bca_interval",

@@ -8,7 +8,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_proba
+from .._validation import check_proba, plain
 
 __all__ = ["adjust_to_prior", "check_prior", "project_to_simplex", "shift_cutoff"]
 
@@ -34,14 +34,14 @@ def check_prior(
     if isinstance(prior, numbers.Real) and not isinstance(prior, bool):
         if n_classes != 2:
             raise ValueError(
-                f"`{name}` is a single number ({prior!r}), which is only meaningful for two "
+                f"`{name}` is a single number ({plain(prior)!r}), which is only meaningful for two "
                 f"classes; give one entry per class ({n_classes} entries)."
             )
         prior = [1.0 - float(prior), float(prior)]
     try:
         arr = np.asarray(prior, dtype=float)
     except (TypeError, ValueError) as exc:
-        raise ValueError(f"`{name}` must be numeric class priors; got {prior!r}.") from exc
+        raise ValueError(f"`{name}` must be numeric class priors; got {plain(prior)!r}.") from exc
     if arr.ndim != 1 or arr.shape[0] != n_classes:
         raise ValueError(
             f"`{name}` must have one entry per class ({n_classes} entries); got shape {arr.shape}."
@@ -180,7 +180,7 @@ def shift_cutoff(cutoff: Any, source_prior: Any, target_prior: Any) -> np.ndarra
     """
     t = np.asarray(cutoff, dtype=float)
     if not np.all(np.isfinite(t)) or np.any((t < 0) | (t > 1)):
-        raise ValueError(f"`cutoff` must be in [0, 1]; got {cutoff!r}.")
+        raise ValueError(f"`cutoff` must be in [0, 1]; got {plain(cutoff)!r}.")
     ps = _as_binary_prior(source_prior, "source_prior")
     pt = _as_binary_prior(target_prior, "target_prior")
     ratio = (pt / (1.0 - pt)) / (ps / (1.0 - ps))
@@ -207,7 +207,7 @@ def project_to_simplex(v: Any) -> np.ndarray:
     """
     x = np.asarray(v, dtype=float)
     if x.ndim != 1 or x.shape[0] == 0 or not np.all(np.isfinite(x)):
-        raise ValueError(f"`v` must be a finite non-empty 1-d vector; got {v!r}.")
+        raise ValueError(f"`v` must be a finite non-empty 1-d vector; got {plain(v)!r}.")
     u = np.sort(x)[::-1]
     css = np.cumsum(u) - 1.0
     idx = np.arange(1, x.shape[0] + 1)

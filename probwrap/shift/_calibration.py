@@ -7,7 +7,7 @@ from typing import Any
 import numpy as np
 from scipy.optimize import minimize
 
-from .._validation import check_labels, check_same_length, check_sample_weight, check_scores
+from .._validation import check_labels, check_same_length, check_sample_weight, check_scores, plain
 from ..calibration._logodds import proba_to_log_proba
 
 __all__ = ["BiasCorrectedScaling"]
@@ -144,7 +144,7 @@ class BiasCorrectedScaling:
         number of classes whose parameters start the optimiser (used by bootstrap resampling).
         """
         if self.kind not in _KINDS:
-            raise ValueError(f"`kind` must be one of {_KINDS}; got {self.kind!r}.")
+            raise ValueError(f"`kind` must be one of {_KINDS}; got {plain(self.kind)!r}.")
         z = check_scores(log_proba, name="log_proba", ndim=2)
         n, k = z.shape
         check_same_length(("log_proba", z), ("y", y))

@@ -11,7 +11,7 @@ from scipy.stats import beta as beta_dist
 from scipy.stats import chi2
 from sklearn.exceptions import ConvergenceWarning
 
-from .._validation import check_labels, check_proba, check_same_length, check_sample_weight
+from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ._adjust import check_prior, project_to_simplex
 
 __all__ = [
@@ -28,6 +28,9 @@ __all__ = [
     "PriorNotIdentifiedWarning",
     "BoundaryPriorWarning",
     "kish_weights",
+    "evidence_cutoff",
+    "null_harm",
+    "null_harm_scale",
 ]
 
 
@@ -63,6 +66,10 @@ class PriorEstimate:
         Bootstrap resamples dropped because a class vanished from the labelled resample.
     ml_prior : ndarray of shape (k,) or None
         The plain maximum-likelihood prior (EM methods), which the interval is built around.
+    null_harm_scale : float or None
+        Expected relative increase of the log loss, when nothing moved, per unit of
+        ``E[w(T)^2 T]`` for a rule that applies the share ``w(T)`` of the estimate (see
+        :func:`evidence_cutoff`); None where it was not computed.
     """
 
     prior: np.ndarray
@@ -77,6 +84,7 @@ class PriorEstimate:
     identified: bool = True
     n_dropped: int = 0
     ml_prior: np.ndarray | None = None
+    null_harm_scale: float | None = None
 
 
 @dataclass(frozen=True)
@@ -146,7 +154,7 @@ def _check_confusion(confusion: Any, k: int) -> np.ndarray:
     try:
         c = np.asarray(confusion, dtype=float)
     except (TypeError, ValueError) as exc:
-        raise ValueError(f"`confusion` must be a numeric (k, k) matrix; got {confusion!r}.") from exc
+        raise ValueError(f"`confusion` must be a numeric (k, k) matrix; got {plain(confusion)!r}.") from exc
     if c.shape != (k, k):
         raise ValueError(
             f"`confusion` must have shape ({k}, {k}) to match `proba`; got shape {c.shape}."
@@ -442,13 +450,13 @@ def em_prior(
     src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
     start = src if init is None else check_prior(init, k, name="init", strictly_positive=True)
     if not (isinstance(tol, (int, float)) and tol > 0):
-        raise ValueError(f"`tol` must be a positive number; got {tol!r}.")
+        raise ValueError(f"`tol` must be a positive number; got {plain(tol)!r}.")
     if not (isinstance(max_iter, (int, np.integer)) and max_iter >= 1):
-        raise ValueError(f"`max_iter` must be a positive integer; got {max_iter!r}.")
+        raise ValueError(f"`max_iter` must be a positive integer; got {plain(max_iter)!r}.")
     if not (isinstance(prior_strength, (int, float)) and np.isfinite(prior_strength)
             and prior_strength >= 0):
         raise ValueError(
-            f"`prior_strength` must be a finite non-negative number; got {prior_strength!r}."
+            f"`prior_strength` must be a finite non-negative number; got {plain(prior_strength)!r}."
         )
     _warn_empty_columns(w @ p, "predicted probability mass")
     prior, n_iter, converged, dist = _solve_prior(
@@ -543,6 +551,119 @@ def _score_rows(p: np.ndarray, src: np.ndarray) -> np.ndarray:
     """
     q = p / src
     return q[:, 1:] - q[:, :1]
+
+
+def null_harm(cutoff: float, df: int) -> float:
+    r"""``E[(T - a)^2 / T; T > a]`` for ``T`` chi-square with ``df`` degrees of freedom, ``a = cutoff * df``.
+
+    When nothing moved, an estimate :math:`X` of the change of the priors has the statistic
+    :math:`T = X^\top \Sigma^{-1} X` (chi-square, ``df = k - 1``) and the rule
+    :math:`w = \max(0, 1 - a / T)` applies :math:`wX`; its squared error in the metric of
+    :math:`\Sigma` is :math:`w^2 T = (T - a)^2 / T` for :math:`T > a` and 0 otherwise. This
+    function is the expectation of that quantity, :math:`E[T; T>a] - 2a P(T>a) + a^2
+    E[1/T; T>a]`, in closed form from the chi-square density identities :math:`t f_d(t) = d
+    f_{d+2}(t)` and, for :math:`d \ge 3`, :math:`f_d(t)/t = f_{d-2}(t)/(d-2)`; for :math:`d = 2`
+    the last term is an exponential integral, for :math:`d = 1` it follows by one integration
+    by parts. ``cutoff = 0`` gives ``df``, the chi-square mean; it falls to 0 as ``cutoff``
+    grows.
+
+    Examples
+    --------
+    >>> from probwrap.shift._estimate import null_harm
+    >>> round(null_harm(0.0, 1), 6), round(null_harm(1.0, 1), 4)
+    (1.0, 0.3333)
+    """
+    from scipy.special import exp1
+    from scipy.stats import chi2 as chi2_dist
+
+    d = int(df)
+    a = float(cutoff) * d
+    if a <= 0:
+        return float(d)
+    upper = d * chi2_dist.sf(a, d + 2)
+    tail = chi2_dist.sf(a, d)
+    if d >= 3:
+        inverse = chi2_dist.sf(a, d - 2) / (d - 2)
+    elif d == 2:
+        inverse = 0.5 * exp1(a / 2.0)
+    else:  # int_a^inf t^(-3/2) e^(-t/2) dt = 2 a^(-1/2) e^(-a/2) - int_a^inf t^(-1/2) e^(-t/2) dt
+        inverse = 2.0 * np.exp(-a / 2.0) / np.sqrt(2.0 * np.pi * a) - tail
+    return float(max(upper - 2.0 * a * tail + a * a * inverse, 0.0))
+
+
+def null_harm_scale(
+    proba: np.ndarray, sample_weight: np.ndarray, source_prior: np.ndarray, mean_cov: np.ndarray
+) -> float:
+    r"""Relative harm, when nothing moved, of applying a change of the priors of size ``T``.
+
+    With calibrated posteriors ``proba`` of the unlabelled rows, the source prior
+    :math:`\pi^s` and the covariance ``mean_cov`` (:math:`V`) of the difference of the mean
+    score between unlabelled and labelled rows (the denominator of the shift test), a change
+    :math:`\Delta` of the priors (coordinates ``1..k-1``) applied when nothing moved costs, per
+    row and to second order, :math:`\tfrac12 \Delta^\top K \Delta` nats of log loss, with
+    :math:`K` the expected Fisher information of the re-weighted posteriors about the priors,
+    :math:`K = E[\sum_j p_j b_j b_j^\top] - J`, :math:`b_j = e_j/\pi^s_j - 1_{j=0}\,\mathbf 1/\pi^s_0`,
+    :math:`J = E[u u^\top]` (for two classes :math:`K = E[p(1-p)] / (\pi^s_0 \pi^s_1)^2`).
+    The one-step estimate of the change, :math:`X = J^{-1} \bar u`, has covariance
+    :math:`\Sigma = J^{-1} V J^{-1}` and statistic :math:`T = X^\top \Sigma^{-1} X`, so
+    :math:`\Delta^\top K \Delta \le \lambda\, T` for :math:`\Delta` along :math:`X`, with
+    :math:`\lambda` the largest eigenvalue of :math:`K\Sigma`. Divided by the expected log loss
+    of the posteriors themselves (their mean entropy), the expected relative harm of a rule
+    that applies the share :math:`w(T)` is at most ``scale * E[w(T)^2 T]``, where this
+    function returns ``scale`` :math:`= \lambda / (2 L_0)`.
+    """
+    p = np.asarray(proba, dtype=float)
+    w = np.asarray(sample_weight, dtype=float)
+    src = np.asarray(source_prior, dtype=float)
+    wn = w / w.sum()
+    u = _score_rows(p, src)
+    j = (u * wn[:, None]).T @ u
+    mp = wn @ p
+    k_mat = np.diag(mp[1:] / src[1:] ** 2) + mp[0] / src[0] ** 2 - j
+    j_inv = np.linalg.pinv(j)
+    sigma = j_inv @ np.atleast_2d(mean_cov) @ j_inv
+    lam = float(np.max(np.linalg.eigvals(k_mat @ sigma).real, initial=0.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ent = -np.where(p > 0, p * np.log(p), 0.0).sum(axis=1)
+    loss = float(wn @ ent)
+    if not (loss > 0 and np.isfinite(lam)):
+        return 0.0
+    return max(lam, 0.0) / (2.0 * loss)
+
+
+def evidence_cutoff(harm_scale: float | None, df: int, max_harm: float | None,
+                    floor: float) -> float:
+    r"""The cutoff ``c`` of the shrinkage rule ``w = max(0, 1 - c df / T)``.
+
+    ``floor`` (``min_evidence``) when ``max_harm`` is None or the expected relative harm
+    under no shift, ``harm_scale * null_harm(floor, df)``, is already at most ``max_harm``;
+    otherwise the smallest ``c > floor`` with ``harm_scale * null_harm(c, df) = max_harm``
+    (root by Brent's method; :func:`null_harm` falls monotonically in ``c``).
+
+    Examples
+    --------
+    >>> from probwrap.shift._estimate import evidence_cutoff, null_harm
+    >>> evidence_cutoff(0.01, 1, 0.01, 1.0)          # harmless enough at the floor
+    1.0
+    >>> c = evidence_cutoff(0.2, 1, 0.01, 1.0)
+    >>> round(0.2 * null_harm(c, 1), 6)
+    0.01
+    """
+    if max_harm is None or harm_scale is None or not np.isfinite(harm_scale) or harm_scale <= 0:
+        return float(floor)
+    if harm_scale * null_harm(floor, df) <= max_harm:
+        return float(floor)
+    from scipy.optimize import brentq
+
+    def excess(c: float) -> float:
+        return harm_scale * null_harm(c, df) - max_harm
+
+    hi = max(float(floor), 1.0)
+    while excess(hi) > 0 and hi < 1e4:
+        hi *= 2.0
+    if excess(hi) > 0:
+        return hi
+    return float(brentq(excess, float(floor), hi, xtol=1e-6))
 
 
 def _mean_cov(v: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray, float]:
@@ -909,11 +1030,11 @@ def binomial_interval(
     """
     pr = np.asarray(proportion, dtype=float)
     if not (0.0 < confidence_level < 1.0):
-        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {plain(confidence_level)!r}.")
     if not n > 0:
-        raise ValueError(f"`n` must be positive; got {n!r}.")
+        raise ValueError(f"`n` must be positive; got {plain(n)!r}.")
     if not np.all(np.isfinite(pr)) or np.any((pr < 0) | (pr > 1)):
-        raise ValueError(f"`proportion` must be in [0, 1]; got {proportion!r}.")
+        raise ValueError(f"`proportion` must be in [0, 1]; got {plain(proportion)!r}.")
     alpha = 1.0 - confidence_level
     x = pr * n
     with np.errstate(invalid="ignore"):

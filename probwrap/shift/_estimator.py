@@ -10,7 +10,7 @@ import numpy as np
 from scipy.special import expit
 from sklearn.utils import check_random_state
 
-from .._validation import check_labels, check_proba, check_same_length, check_sample_weight
+from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ..calibration._logodds import proba_to_log_proba
 from ._calibration import BiasCorrectedScaling, _log_softmax
 from ._estimate import (
@@ -26,6 +26,7 @@ from ._estimate import (
     acc_prior,
     bbse_prior,
     heldout_confusion,
+    null_harm_scale,
 )
 from ._interval import bca_interval, score_interval
 
@@ -155,30 +156,30 @@ class PriorEstimator:
     # -- validation ----------------------------------------------------------------------------
     def _check_params(self) -> None:
         if self.method not in PRIOR_METHODS:
-            raise ValueError(f"`method` must be one of {PRIOR_METHODS}; got {self.method!r}.")
+            raise ValueError(f"`method` must be one of {PRIOR_METHODS}; got {plain(self.method)!r}.")
         if self.calibration not in CALIBRATIONS:
             raise ValueError(
-                f"`calibration` must be one of {CALIBRATIONS}; got {self.calibration!r}."
+                f"`calibration` must be one of {CALIBRATIONS}; got {plain(self.calibration)!r}."
             )
         if not (isinstance(self.n_resamples, numbers.Integral) and self.n_resamples >= 0):
             raise ValueError(
-                f"`n_resamples` must be a non-negative integer; got {self.n_resamples!r}."
+                f"`n_resamples` must be a non-negative integer; got {plain(self.n_resamples)!r}."
             )
         if not (isinstance(self.confidence_level, numbers.Real) and 0 < self.confidence_level < 1):
             raise ValueError(
-                f"`confidence_level` must be in (0, 1); got {self.confidence_level!r}."
+                f"`confidence_level` must be in (0, 1); got {plain(self.confidence_level)!r}."
             )
         if not (isinstance(self.tol, numbers.Real) and self.tol > 0):
-            raise ValueError(f"`tol` must be a positive number; got {self.tol!r}.")
+            raise ValueError(f"`tol` must be a positive number; got {plain(self.tol)!r}.")
         if not (isinstance(self.max_iter, numbers.Integral) and self.max_iter >= 1):
-            raise ValueError(f"`max_iter` must be a positive integer; got {self.max_iter!r}.")
+            raise ValueError(f"`max_iter` must be a positive integer; got {plain(self.max_iter)!r}.")
         strength = getattr(self, "prior_strength", 0.0)
         if not (isinstance(strength, numbers.Real) and np.isfinite(strength) and strength >= 0):
             raise ValueError(
-                f"`prior_strength` must be a finite non-negative number; got {strength!r}."
+                f"`prior_strength` must be a finite non-negative number; got {plain(strength)!r}."
             )
         if getattr(self, "interval", "score") not in INTERVALS:
-            raise ValueError(f"`interval` must be one of {INTERVALS}; got {self.interval!r}.")
+            raise ValueError(f"`interval` must be one of {INTERVALS}; got {plain(self.interval)!r}.")
 
     # -- fitting -------------------------------------------------------------------------------
     def fit(
@@ -480,9 +481,12 @@ class PriorEstimator:
                               float(self.tol), int(self.max_iter))[0]
             self._warn_boundary(ml, p, wk, n_eff)
         m_t, c_t, _ = _mean_cov(_score_rows(p, src), w)
-        stat, pvalue = _score_stat_moments(
-            (m_t, c_t, n_eff), getattr(self, "_source_score", None), k
-        )
+        source_score = getattr(self, "_source_score", None)
+        stat, pvalue = _score_stat_moments((m_t, c_t, n_eff), source_score, k)
+        mean_cov = c_t / max(n_eff - 1.0, 1.0)
+        if source_score is not None:
+            mean_cov = mean_cov + source_score[1]
+        harm_scale = null_harm_scale(p, w, src, mean_cov)
         bounds, dropped = None, 0
         if self.n_resamples > 0 and interval:
             source = self._source_rows()
@@ -526,6 +530,7 @@ class PriorEstimator:
             identified=point.identified,
             n_dropped=dropped,
             ml_prior=ml,
+            null_harm_scale=harm_scale,
         )
 
     def _warn_boundary(self, ml: np.ndarray, p: np.ndarray, w: np.ndarray, n_eff: float) -> None:
@@ -739,7 +744,7 @@ def prior_by_batch(
         raise ValueError("Give exactly one of `batches` (a label per row) and `batch_size`.")
     if batch_size is not None:
         if not (isinstance(batch_size, numbers.Integral) and batch_size >= 1):
-            raise ValueError(f"`batch_size` must be a positive integer; got {batch_size!r}.")
+            raise ValueError(f"`batch_size` must be a positive integer; got {plain(batch_size)!r}.")
         labels = np.arange(n) // int(batch_size)
     else:
         labels = np.asarray(batches)

@@ -8,6 +8,8 @@ from typing import Any
 import numpy as np
 from scipy.special import ndtr, ndtri
 
+from .._validation import plain
+
 __all__ = ["bca_interval", "jackknife_acceleration", "score_interval"]
 
 
@@ -102,7 +104,7 @@ def bca_interval(
     True
     """
     if not 0.0 < float(confidence_level) < 1.0:
-        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {plain(confidence_level)!r}.")
     theta = np.asarray(estimate, dtype=float)
     b = np.asarray(draws, dtype=float)
     if b.ndim == 0 or b.shape[0] < 1 or b.shape[1:] != theta.shape:
