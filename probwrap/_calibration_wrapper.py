@@ -526,8 +526,9 @@ class CalibrationWrapper(HeldOutClassifierBase):
         return sorted(names, key=key)
 
     def _fallback_name(self, names: list[str], binary: bool) -> str:
-        """The most regularised candidate: Platt (binary) or temperature (multiclass) scaling
-        with smoothed targets when listed, else the candidate with the fewest parameters."""
+        """The most regularised candidate: Platt scaling with smoothed targets (binary) or
+        temperature scaling with its weak prior (multiclass) when listed, else the candidate
+        with the fewest parameters."""
         for preferred in (("platt", "temperature") if binary else ("temperature", "platt")):
             if preferred in names:
                 return preferred
@@ -594,6 +595,11 @@ class CalibrationWrapper(HeldOutClassifierBase):
                 fine = [nm for nm in active if states[nm]["boundary"] is None]
                 if not fine or wt.sum() <= 0:
                     continue
+                for nm in [a for a in active if a not in fine]:
+                    # not eligible whatever the other folds give: not scored further
+                    notes[nm] = f"not eligible: the fit reached a boundary ({states[nm]['boundary']})"
+                    active.remove(nm)
+                    del states[nm]
                 wn = wt / wt.sum()
                 n_eff = float(wt.sum() ** 2 / (wt @ wt))
                 loss = {nm: states[nm]["per_row"][test] for nm in active}
@@ -635,7 +641,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
             fallback = self._fallback_name(names, binary)
             reason = (
                 f"a class has only {int(present.min())} held-out row(s), too few to score "
-                f"candidate maps by cross-validation; using {plain(fallback)!r} (smoothed targets), "
+                f"candidate maps by cross-validation; using {plain(fallback)!r}, "
                 "the most regularised map"
             )
             warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
@@ -689,7 +695,7 @@ class CalibrationWrapper(HeldOutClassifierBase):
         reason = (
             "no candidate map could be scored and used: "
             + "; ".join(f"{nm}: {txt}" for nm, txt in notes.items())
-            + f"; using {plain(fallback)!r} (smoothed targets), the most regularised map"
+            + f"; using {plain(fallback)!r}, the most regularised map"
         )
         warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
         notes.setdefault(fallback, "chosen as the fallback: no candidate was eligible")

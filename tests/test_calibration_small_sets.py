@@ -48,14 +48,16 @@ def _sklearn_loss(base, X_cal, y_cal, X_te, y_te, method):
 @pytest.mark.parametrize("n", [2, 3, 5, 12])
 def test_binary_maps_stay_strictly_inside_zero_one_on_separated_tiny_sets(cls, n):
     # n negatives below n positives: every map's output stays within its documented floor,
-    # 1 / (N + 2) (Laplace's rule of succession for N rows), also far outside the data
+    # 1 / (N + 2) (Laplace's rule of succession for N rows) for the maps fitted to smoothed
+    # targets, 1 / (2 (N + 1)) (Krichevsky-Trofimov's add-one-half) for temperature scaling
+    # with its prior, also far outside the data
     s = np.r_[np.linspace(-3, -1, n), np.linspace(1, 3, n)]
     y = np.r_[np.zeros(n), np.ones(n)]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UserWarning)  # beta warns about the separation
         m = cls().fit(s, y)
     out = m.predict(np.r_[-1e6, -50.0, s, 50.0, 1e6])
-    floor = 1.0 / (2 * n + 2)
+    floor = 1.0 / (2 * (2 * n + 1)) if cls is TemperatureMap else 1.0 / (2 * n + 2)
     assert np.all(out >= floor * (1 - 1e-12)) and np.all(out <= 1 - floor * (1 - 1e-12))
     if cls is not VennAbersMap:  # Venn-Abers meets the bound by construction
         assert m.floor_ == pytest.approx(floor)
@@ -69,7 +71,10 @@ def test_temperature_multiclass_stays_inside_zero_one_on_separated_tiny_sets(n_p
     m = TemperatureMap().fit(z, y)
     assert m.boundary_ is None and np.isfinite(m.temperature_)
     out = m.predict(np.vstack([z, 1e4 * np.eye(k)]))
-    assert out.min() >= m.floor_ / (1 + k * m.floor_) and m.floor_ == pytest.approx(1 / (k * n_per_class + k))
+    n = k * n_per_class
+    # Krichevsky-Trofimov: 1/2 / (N + 1) for an error after N rows, shared by the k - 1 others
+    assert m.floor_ == pytest.approx(1 / (2 * (n + 1) * (k - 1)))
+    assert out.min() >= m.floor_ / (1 + k * m.floor_)
     assert out.max() < 1.0
 
 
@@ -88,10 +93,11 @@ def test_wrapper_outputs_strictly_inside_zero_one_binary_and_multiclass(method):
             model = CalibrationWrapper(FrozenEstimator(est), method=method).fit(X_cal, yy)
         p = model.predict_proba(far)
         assert p.min() > 0.0 and p.max() < 1.0, method
-        # no probability more extreme than the rule of succession for the calibration rows
-        # allows (one-vs-rest maps each keep 1 / (N + 2); renormalising can halve it at most
-        # k times over)
-        assert p.min() >= 1.0 / (len(yy) + 2) / len(model.classes_) * (1 - 1e-9)
+        # no probability more extreme than the floors allow: one-vs-rest maps each keep
+        # Laplace's 1 / (N + 2), temperature Krichevsky-Trofimov's 1 / (2 (N + 1) (k - 1));
+        # renormalising a row can divide them by at most 2
+        k = len(model.classes_)
+        assert p.min() >= 1.0 / (2 * (len(yy) + 1) * max(k - 1, 1)) / 2 * (1 - 1e-9)
 
 
 # --------------------------------------------------------------------------- the failures
@@ -119,7 +125,9 @@ def test_separable_44_row_three_class_set(wine_44):
     temp = CalibrationWrapper(FrozenEstimator(base), method="temperature").fit(X_cal, y_cal)
     assert temp.calibrator_.boundary_ is None and temp.calibrator_.temperature_ > 0.1
     p = model.predict_proba(X_te)
-    assert p.min() >= 1 / (44 + 3) / 3
+    # the chosen map's floor (at least Krichevsky-Trofimov's 1 / (2 (N + 1) (k - 1)), halved
+    # at most by renormalising)
+    assert p.min() >= 1 / (2 * 45 * 2) / 2
     ours = log_loss(y_te, p, labels=model.classes_)
     # within 15 % of scikit-learn's (regularised) sigmoid calibration on the same rows
     assert ours <= 1.15 * _sklearn_loss(base, X_cal, y_cal, X_te, y_te, "sigmoid")
@@ -150,7 +158,8 @@ def test_rank_separated_binary_set(cancer_142):
     model = CalibrationWrapper(FrozenEstimator(base), random_state=0).fit(X_cal, y_cal)
     assert model.method_ != "isotonic" and "not eligible" in model.method_notes_["isotonic"]
     p = model.predict_proba(X_te)
-    assert p.min() >= 1 / (142 + 2) * (1 - 1e-9)
+    # at least the smaller of the two floors: Krichevsky-Trofimov's 1 / (2 (N + 1))
+    assert p.min() >= 1 / (2 * (142 + 1)) * (1 - 1e-9)
     ours = log_loss(y_te, p)
     # the test rows are not separated: an exact 0/1 step would cost ~34.5 nats on a wrong row
     assert ours <= 1.15 * _sklearn_loss(base, X_cal, y_cal, X_te, y_te, "sigmoid")
@@ -297,5 +306,8 @@ def test_auto_scores_a_sample_of_many_rows_and_fits_the_choice_on_all(monkeypatc
     X = np.arange(len(y)).reshape(-1, 1)
     model = CalibrationWrapper(FrozenEstimator(_Table(table).fit(X, y)), random_state=0).fit(X, y)
     assert "sample of 500 of 2000 rows" in model.method_notes_["auto"]
-    # the chosen map was fitted on all 2000 rows: its floor is 1 / (2000 + 2)
-    assert model.calibrator_.floor_ == pytest.approx(1 / 2002)
+    # the chosen map was fitted on all 2000 rows: its floor is 1 / (2000 + 2) (Laplace, for
+    # the maps fitted to smoothed targets) or 1 / (2 (2000 + 1)) (Krichevsky-Trofimov, for
+    # temperature scaling with its prior)
+    expected = 1 / (2 * 2001) if model.method_ == "temperature" else 1 / 2002
+    assert model.calibrator_.floor_ == pytest.approx(expected)

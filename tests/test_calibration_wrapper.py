@@ -94,7 +94,7 @@ def test_temperature_close_to_calibrated_classifier_cv_temperature():
     X_tr, X_cal, y_tr, y_cal = train_test_split(X, y, test_size=0.5, random_state=0, stratify=y)
     base = make_pipeline(StandardScaler(), LogisticRegression(C=10.0, max_iter=3000)).fit(X_tr, y_tr)
     # scikit-learn fits the raw labels: compare with smooth_targets=False
-    ours = CalibrationWrapper(FrozenEstimator(base), method=TemperatureMap(smooth_targets=False))
+    ours = CalibrationWrapper(FrozenEstimator(base), method=TemperatureMap(shrinkage=0))
     ours.fit(X_cal, y_cal)
     ref = CalibratedClassifierCV(FrozenEstimator(base), method="temperature").fit(X_cal, y_cal)
     # Tolerance: the same one-parameter log-loss minimum, found by a root search here and by

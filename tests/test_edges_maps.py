@@ -77,13 +77,14 @@ def test_scale_free_maps_ignore_a_common_huge_weight(cls, big):
     s, y = _data()
     probe = np.linspace(-4, 4, 41)
     w = np.full(s.shape[0], big)
-    # the plain (unsmoothed) fits minimise a weighted mean: a common weight changes nothing
-    ref = cls(smooth_targets=False).fit(s, y).predict(probe)
-    got = cls(smooth_targets=False).fit(s, y, sample_weight=w).predict(probe)
+    # the plain (unregularised) fits minimise a weighted mean: a common weight changes nothing
+    plain = {"shrinkage": 0} if cls is TemperatureMap else {"smooth_targets": False}
+    ref = cls(**plain).fit(s, y).predict(probe)
+    got = cls(**plain).fit(s, y, sample_weight=w).predict(probe)
     np.testing.assert_allclose(got, ref, rtol=1e-9, atol=1e-12)
-    # smoothed fits count weights as rows: with ~1e308 rows per class the targets
-    # (N + 1) / (N + 2) and 1 / (N + 2) are 1 and 0 and the floor 1 / (N + 2) is 0 in doubles,
-    # so the smoothed fit is the plain one
+    # regularised fits count weights as rows: with ~1e308 rows per class the targets
+    # (N + 1) / (N + 2) and 1 / (N + 2) are 1 and 0, a prior worth half a row weighs nothing
+    # and the floor is 0 in doubles, so the default fit is the plain one
     smoothed = cls().fit(s, y, sample_weight=w)
     assert smoothed.floor_ == 0.0
     np.testing.assert_allclose(smoothed.predict(probe), ref, rtol=1e-9, atol=1e-12)

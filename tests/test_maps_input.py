@@ -117,8 +117,15 @@ def test_two_column_logits_for_temperature_round_trip():
     m = TemperatureMap().fit(z, Y)
     out = m.predict(z)
     assert out.shape == (8, 2)
-    # softmax of (-s, s) / T is sigmoid(2 s / T): the same map as binary scores 2 s
-    np.testing.assert_allclose(out[:, 1], TemperatureMap().fit(2 * S, Y).predict(2 * S))
+    # softmax of (-s, s) / T is sigmoid(2 s / T): the same map as binary scores 2 s (the same
+    # temperature, prior and floor; only the floor is applied differently, clipped in the
+    # binary map and clipped then renormalised for columns, so compare inside the floors)
+    binary = TemperatureMap().fit(2 * S, Y)
+    assert m.temperature_ == pytest.approx(binary.temperature_, rel=1e-10)
+    assert m.floor_ == binary.floor_
+    inside = (out[:, 1] > 2 * m.floor_) & (out[:, 1] < 1 - 2 * m.floor_)
+    assert inside.sum() >= 5
+    np.testing.assert_allclose(out[inside, 1], binary.predict(2 * S)[inside])
 
 
 def test_more_classes_than_columns():
@@ -156,7 +163,7 @@ def test_separation_warns_and_stays_finite():
     assert np.all(np.isfinite(b.predict(S)))
     assert b.boundary_ is not None  # not eligible in CalibrationWrapper(method="auto")
     with pytest.warns(UserWarning, match="end of the search range"):
-        t = TemperatureMap(smooth_targets=False).fit(S, y)
+        t = TemperatureMap(shrinkage=0).fit(S, y)
     assert np.all(np.isfinite(t.predict(S)))
     assert t.boundary_.startswith("temperature at the low end")
     # smoothed targets (the default) keep the temperature finite and inside the range
@@ -167,8 +174,13 @@ def test_separation_warns_and_stays_finite():
 def test_scores_against_the_labels_warn_in_temperature():
     # T > 0 cannot turn the order round: the best it can do is a very high temperature
     with pytest.warns(UserWarning, match="end of the search range"):
-        t = TemperatureMap().fit(S, 1 - Y)
+        t = TemperatureMap(shrinkage=0).fit(S, 1 - Y)
     np.testing.assert_allclose(t.predict(S), 0.5, atol=1e-5)
+    # the default's prior (worth half a row of these 8) keeps T finite instead: no boundary,
+    # and the output is far flatter than the scores themselves (expit(S) reaches 0.95)
+    t = TemperatureMap().fit(S, 1 - Y)
+    assert t.boundary_ is None
+    np.testing.assert_allclose(t.predict(S), 0.5, atol=0.1)
 
 
 @pytest.mark.parametrize("cls", ALL_MAPS)

@@ -266,7 +266,7 @@ def test_temperature_binary_matches_brute_force(cancer_scores):
         eta = s / np.exp(log_t)
         return float(wn @ (np.logaddexp(0, eta) - y * eta))
 
-    m = TemperatureMap(smooth_targets=False).fit(s, y, sample_weight=w)
+    m = TemperatureMap(shrinkage=0).fit(s, y, sample_weight=w)
     best, step = _brute_log_t(loss, 0.0)
     assert abs(np.log(m.temperature_) - best) <= step
     assert loss(np.log(m.temperature_)) <= loss(best) + 1e-12
@@ -282,7 +282,7 @@ def test_temperature_multiclass_matches_brute_force(digits_logits):
         lp = log_softmax(z / np.exp(log_t), axis=1)
         return float(-(wn @ lp[np.arange(len(y)), y]))
 
-    m = TemperatureMap(smooth_targets=False).fit(z, y, sample_weight=w)
+    m = TemperatureMap(shrinkage=0).fit(z, y, sample_weight=w)
     best, step = _brute_log_t(loss, 2.0, half_width=8.0)
     assert abs(np.log(m.temperature_) - best) <= step
     assert loss(np.log(m.temperature_)) <= loss(best) + 1e-12
@@ -296,13 +296,13 @@ def test_temperature_closed_form_example():
     # With e = exp(4 / T) the loss is -3 ln(e / (e + 2)) - ln(1 / (e + 2)); setting the
     # derivative -3 / e + 4 / (e + 2) to zero gives e = 6, so T = 4 / ln 6.
     z = np.array([[4.0, 0, 0], [0, 4.0, 0], [0, 0, 4.0], [4.0, 0, 0]])
-    m = TemperatureMap(smooth_targets=False).fit(z, [0, 1, 2, 1])
+    m = TemperatureMap(shrinkage=0).fit(z, [0, 1, 2, 1])
     assert m.temperature_ == pytest.approx(4 / np.log(6), rel=1e-8)
     # Smoothed targets: (N_y + 1) / (N_y + 2) on the true class, 1 / (2 (N_y + 2)) on each of the
     # two others; class counts 1, 2, 1. The top-scored column gets targets 2/3, 3/4, 2/3 and
     # 1/8 (the wrong row). The slope vanishes where the model's top probability e / (e + 2)
     # equals their mean 53/96, so e = 106/43 and T = 4 / ln(106/43).
-    m = TemperatureMap().fit(z, [0, 1, 2, 1])
+    m = TemperatureMap(smooth_targets=True, shrinkage=0).fit(z, [0, 1, 2, 1])
     assert m.temperature_ == pytest.approx(4 / np.log(106 / 43), rel=1e-8)
 
 
@@ -323,9 +323,38 @@ def test_temperature_smoothed_matches_scipy_minimisation(digits_logits):
         return float(-(wn @ np.sum(t * log_softmax(z / np.exp(log_t), axis=1), axis=1)))
 
     res = minimize_scalar(loss, bounds=(-5, 10), method="bounded", options={"xatol": 1e-10})
-    m = TemperatureMap().fit(z, y, sample_weight=w)
+    m = TemperatureMap(smooth_targets=True, shrinkage=0).fit(z, y, sample_weight=w)
     assert np.log(m.temperature_) == pytest.approx(res.x, abs=1e-5)
     assert m.floor_ == pytest.approx(1 / (w.sum() + k))
+
+
+@pytest.mark.parametrize("rows", [12, 300])
+def test_temperature_prior_matches_scipy_minimisation(digits_logits, rows):
+    # the default objective: weighted log loss against the labels (as a total over the weight)
+    # plus the gamma prior 0.5 * (beta / beta0 - log(beta / beta0) - 1) on beta = 1 / T, its
+    # mode beta0 at unit root-mean-square of the row-centred logits; minimised directly by
+    # SciPy's bounded scalar search on log T (12 rows: a set the logits separate, where only
+    # the prior keeps T finite)
+    from scipy.optimize import minimize_scalar
+
+    z, y = digits_logits
+    z, y = z[:rows], y[:rows]
+    w = _weights(z.shape[0], seed=16)
+    w = w * (w.shape[0] / w.sum())  # frequencies summing to the number of rows
+    beta0 = 1 / np.sqrt(w @ np.mean((z - z.mean(axis=1, keepdims=True)) ** 2, axis=1) / w.sum())
+
+    def objective(log_t):
+        beta = np.exp(-log_t)
+        nll = -(w @ log_softmax(z * beta, axis=1)[np.arange(len(y)), y])
+        return float(nll + 0.5 * (beta / beta0 - np.log(beta / beta0) - 1))
+
+    res = minimize_scalar(objective, bounds=(-8, 8), method="bounded", options={"xatol": 1e-10})
+    m = TemperatureMap().fit(z, y, sample_weight=w)
+    assert m.boundary_ is None
+    # xatol 1e-10 on log T; the objective is flat near its minimum to about 1e-6 relative
+    assert np.log(m.temperature_) == pytest.approx(res.x, abs=1e-5)
+    # Krichevsky-Trofimov: 1/2 / (N + 1) for an error after N rows, shared by k - 1 classes
+    assert m.floor_ == pytest.approx(1 / (2 * (w.sum() + 1) * (z.shape[1] - 1)))
 
 
 # --------------------------------------------------------------------------- binning

@@ -139,3 +139,32 @@ def test_consistency_bad_input_names_argument():
         consistency_band([0.1], [0], 1, n_draws=1)
     with pytest.raises(ValueError, match="`y_prob`"):
         consistency_band([1.2], [0], 1)
+
+
+def test_wilson_band_counts_weights_as_row_frequencies():
+    # weight 2 is a duplicated row: the Wilson band of the weighted rows equals that of the
+    # rows repeated (deterministic); weights summing to 1 cannot be frequencies and are
+    # rescaled to Kish's effective size (equal weights: 1 each), with a warning, so they give
+    # the unweighted band instead of intervals as wide as for a single row
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from probwrap.calibration import WeightScaleWarning
+    from probwrap.plot import ReliabilityDiagram
+
+    rng = np.random.default_rng(8)
+    p = rng.uniform(size=400)
+    y = (rng.uniform(size=400) < p).astype(int)
+    w = rng.integers(1, 4, size=400).astype(float)
+    weighted = ReliabilityDiagram.from_predictions(y, p, sample_weight=w, band="wilson")
+    copies = ReliabilityDiagram.from_predictions(np.repeat(y, w.astype(int)),
+                                                 np.repeat(p, w.astype(int)), band="wilson")
+    np.testing.assert_allclose(weighted.band_low, copies.band_low, rtol=1e-12)
+    np.testing.assert_allclose(weighted.band_high, copies.band_high, rtol=1e-12)
+    plain = ReliabilityDiagram.from_predictions(y, p, band="wilson")
+    with pytest.warns(WeightScaleWarning, match="Kish"):
+        normalised = ReliabilityDiagram.from_predictions(y, p, sample_weight=np.full(400, 1 / 400),
+                                                         band="wilson")
+    # the rescaled totals equal the counts up to the rounding of sums of 1/400 (~1e-15)
+    np.testing.assert_allclose(normalised.band_low, plain.band_low, rtol=1e-9)
+    np.testing.assert_allclose(normalised.band_high, plain.band_high, rtol=1e-9)

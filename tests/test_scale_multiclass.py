@@ -99,3 +99,51 @@ def test_multiclass_cost_policy_on_dask(client, model):
     np.testing.assert_array_equal(remote.predict(Xd).compute(), local.predict(X))
     with pytest.raises(ValueError, match="bayes"):
         CostPolicyWrapper(model, costs=costs, strategy="tuned").fit(Xd, da.from_array(y, chunks=3000))
+
+
+def test_multiclass_dask_temperature_with_weights_summing_to_one(client, model):
+    # weights that cannot be row frequencies (they sum to 1): both paths put them on Kish's
+    # effective sample size for the prior's weight and the floor; consistency test against
+    # the in-memory path on the same rows
+    from probwrap import CalibrationWrapper
+    from probwrap.calibration import WeightScaleWarning
+
+    X, y = _data(6000, 4, [0.5, 0.3, 0.2])
+    w = np.random.default_rng(4).uniform(0.5, 1.5, size=len(y))
+    w = w / w.sum()
+    chunks = 1500
+    with pytest.warns(WeightScaleWarning):
+        remote = CalibrationWrapper(model, method="temperature").fit(
+            da.from_array(X, chunks=(chunks, 2)), da.from_array(y, chunks=chunks),
+            sample_weight=da.from_array(w, chunks=chunks),
+        )
+    with pytest.warns(WeightScaleWarning):
+        local = CalibrationWrapper(model, method="temperature").fit(X, y, sample_weight=w)
+    kish = w.sum() ** 2 / (w @ w)
+    # Krichevsky-Trofimov floor 1 / (2 (N + 1) (k - 1)) with N Kish's effective size
+    assert remote.calibrator_.floor_ == pytest.approx(1 / (2 * (kish + 1) * 2), rel=1e-12)
+    assert local.calibrator_.floor_ == pytest.approx(remote.calibrator_.floor_, rel=1e-12)
+    assert remote.calibrator_.temperature_ == pytest.approx(
+        local.calibrator_.temperature_, rel=1e-9
+    )
+
+
+def test_multiclass_dask_one_vs_rest_with_an_absent_class(client, model):
+    # class 2 has no held-out row: its probability is the rule of succession's 1 / (N + k),
+    # never exactly 0, and the same as in memory (consistency test)
+    from probwrap import CalibrationWrapper
+
+    X, y = _data(4000, 5, [0.5, 0.3, 0.2])
+    keep = y != 2
+    X, y = X[keep], y[keep]
+    chunks = 1000
+    with pytest.warns(UserWarning, match="no held-out rows"):
+        remote = CalibrationWrapper(model, method="platt").fit(
+            da.from_array(X, chunks=(chunks, 2)), da.from_array(y, chunks=chunks)
+        )
+    with pytest.warns(UserWarning, match="no held-out rows"):
+        local = CalibrationWrapper(model, method="platt").fit(X, y)
+    assert remote.calibrator_[2] == pytest.approx(1 / (len(y) + 3), rel=1e-12)
+    assert local.calibrator_[2] == pytest.approx(remote.calibrator_[2], rel=1e-12)
+    p = remote.predict_proba(X)
+    assert p.min() > 0 and p.max() < 1

@@ -206,15 +206,23 @@ class CalibrationMap(BaseEstimator):
         """Whether the fit uses counts (and so needs weights on the row-count scale)."""
         return False
 
-    def _set_floor(self, w: np.ndarray, k: int) -> None:
-        """Output floor ``1 / (n + k)``: n the total weight (rows), k the number of classes.
+    def _set_floor(self, w: np.ndarray, k: int, rule: str = "laplace") -> None:
+        """Output floor from the total weight ``n`` (rows) and the number of classes ``k``.
 
-        Laplace's rule of succession: after ``n`` rows none of which fell in a class, its
-        probability is estimated as ``1 / (n + k)``; a calibration set of ``n`` rows supports no
-        probability more extreme than that.
+        ``rule="laplace"`` (maps fitted to smoothed targets): ``1 / (n + k)``, Laplace's rule of
+        succession, the estimate for a class none of ``n`` rows fell in. ``rule="half"`` (maps
+        regularised by a weak prior instead): ``1 / (2 (n + 1) (k - 1))``, the
+        Krichevsky-Trofimov (1981) add-one-half estimate ``(0 + 1/2) / (n + 1)`` of the
+        probability of an error after ``n`` rows without one, shared by the ``k - 1`` other
+        classes. Either way a calibration set of ``n`` rows supports no probability more
+        extreme than that.
         """
         with np.errstate(over="ignore"):  # a total beyond the largest double gives a floor of 0
-            self.floor_ = float(1.0 / (float(w.sum()) + k))
+            n = float(w.sum())
+            if rule == "half":
+                self.floor_ = float(1.0 / (2.0 * (n + 1.0) * (k - 1)))
+            else:
+                self.floor_ = float(1.0 / (n + k))
 
     # -- helpers ---------------------------------------------------------------------------
     def _check_scores(self, scores: Any, *, fitting: bool) -> np.ndarray:

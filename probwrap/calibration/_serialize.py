@@ -48,7 +48,7 @@ from ._beta import BetaMap
 from ._binning import BinningMap
 from ._isotonic import IsotonicMap
 from ._platt import PlattMap
-from ._temperature import TemperatureMap
+from ._temperature import TemperatureMap, _valid_shrinkage
 from ._vector_scaling import MatrixScalingMap, VectorScalingMap
 from ._vector_scaling import _check_settings as _check_scaling_settings
 from ._venn_abers import VennAbersMap
@@ -83,7 +83,9 @@ _ORDER_TOL = 1e-12
 #: number in [0, 0.5); 0 when absent, as written before maps had floors).
 _SPECS: dict[str, tuple[type[CalibrationMap], tuple[str, ...], dict[str, str]]] = {
     "temperature": (
-        TemperatureMap, ("smooth_targets",), {"temperature_": "float", "floor_": "floor"}
+        TemperatureMap,
+        ("smooth_targets", "shrinkage"),
+        {"temperature_": "float", "floor_": "floor"},
     ),
     "platt": (
         PlattMap,
@@ -547,6 +549,11 @@ def _check_settings(method: str, m: Any) -> None:
         raise ValueError(
             f"field 'settings.smooth_targets' must be true or false; got {plain(m.smooth_targets)!r}."
         )
+    if method == "temperature":
+        try:
+            _valid_shrinkage(m.shrinkage)
+        except ValueError as exc:
+            raise ValueError(f"field 'settings': {exc}") from None
     if method in ("vector_scaling", "matrix_scaling"):
         try:
             _check_scaling_settings(m)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import numbers
 import warnings
 
 import numpy as np
@@ -64,28 +65,48 @@ def _loss_slope(
     return float(wn @ (expected - target))
 
 
+def _prior_slope(beta: float, lam: float, beta0: float) -> tuple[float, float]:
+    """Slope in ``beta`` of the penalty ``lam * (beta / beta0 - log(beta / beta0) - 1)``, and
+    its derivative with respect to ``log(beta)``.
+
+    The penalty is the negative log-density of a gamma prior on the inverse temperature with
+    its mode at ``beta0`` (shape ``lam + 1`` and rate ``lam / beta0`` when ``lam`` counts
+    rows); it is convex, zero at ``beta0``, and grows without bound toward ``beta -> 0`` and
+    ``beta -> inf``, so that the penalised loss keeps one finite minimum even when the scores
+    separate the classes.
+    """
+    if lam <= 0.0:
+        return 0.0, 0.0
+    return lam * (1.0 / beta0 - 1.0 / beta), lam / beta
+
+
 def _slope_and_curvature(
-    log_beta: float, scores: np.ndarray, target: np.ndarray, wn: np.ndarray
+    log_beta: float, scores: np.ndarray, target: np.ndarray, wn: np.ndarray,
+    prior: tuple[float, float] = (0.0, 1.0),
 ) -> tuple[float, float]:
     """The loss slope of :func:`_loss_slope` and its derivative with respect to ``log(beta)``.
 
     ``target`` is :func:`_target_scores` (it does not depend on ``beta``). The derivative is
     ``beta * sum wn * Var_q(z)``: the variance of the scores under the model's probabilities.
+    ``prior = (lam, beta0)`` adds the slope of the penalty of :func:`_prior_slope`.
     """
     beta = np.exp(log_beta)
+    extra_g, extra_d = _prior_slope(beta, *prior)
     if scores.ndim == 1:
         q = expit(beta * scores)
         sq = scores * q
-        return float(wn @ (sq - target)), float(beta * (wn @ (sq * scores * (1.0 - q))))
+        return (float(wn @ (sq - target)) + extra_g,
+                float(beta * (wn @ (sq * scores * (1.0 - q)))) + extra_d)
     q = softmax(beta * scores, axis=1)
     qz = q * scores
     mean = qz.sum(axis=1)
     var = np.maximum(np.einsum("ij,ij->i", qz, scores) - mean**2, 0.0)
-    return float(wn @ (mean - target)), float(beta * (wn @ var))
+    return float(wn @ (mean - target)) + extra_g, float(beta * (wn @ var)) + extra_d
 
 
 def _root_log_beta(
-    scores: np.ndarray, target: np.ndarray, wn: np.ndarray, lo: float, hi: float, start: float
+    scores: np.ndarray, target: np.ndarray, wn: np.ndarray, lo: float, hi: float, start: float,
+    prior: tuple[float, float] = (0.0, 1.0),
 ) -> tuple[float, str | None]:
     """Root of the loss slope in ``log(beta)`` within ``[lo, hi]``.
 
@@ -101,13 +122,13 @@ def _root_log_beta(
     previous = 2.0 * (hi - lo)
     u = min(max(start, lo), hi)
     for _ in range(300):
-        g, d = _slope_and_curvature(u, scores, target, wn)
+        g, d = _slope_and_curvature(u, scores, target, wn, prior)
         if g == 0.0:
             if d == 0.0:
                 # a plateau (saturated probabilities): the loss is flat up to an end of the range
-                if _slope_and_curvature(hi, scores, target, wn)[0] <= 0.0:
+                if _slope_and_curvature(hi, scores, target, wn, prior)[0] <= 0.0:
                     return hi, "hi"
-                if _slope_and_curvature(lo, scores, target, wn)[0] >= 0.0:
+                if _slope_and_curvature(lo, scores, target, wn, prior)[0] >= 0.0:
                     return lo, "lo"
             return u, None
         if g < 0.0:
@@ -126,11 +147,11 @@ def _root_log_beta(
             # bisect, on a verified bracket: an end of the range is evaluated only now, and
             # when the slope has the same sign there the root lies beyond the range
             if not b_checked:
-                if _slope_and_curvature(hi, scores, target, wn)[0] <= 0.0:
+                if _slope_and_curvature(hi, scores, target, wn, prior)[0] <= 0.0:
                     return hi, "hi"
                 b_checked = True
             if not a_checked:
-                if _slope_and_curvature(lo, scores, target, wn)[0] >= 0.0:
+                if _slope_and_curvature(lo, scores, target, wn, prior)[0] >= 0.0:
                     return lo, "lo"
                 a_checked = True
             new = 0.5 * (a + b)
@@ -138,6 +159,26 @@ def _root_log_beta(
             return new, None
         u = new
     return u, None  # pragma: no cover - the bracket halves at least every other step
+
+
+def _valid_shrinkage(value: object) -> float:
+    if (
+        isinstance(value, bool)
+        or not isinstance(value, numbers.Real)
+        or not (np.isfinite(value) and value >= 0)
+    ):
+        raise ValueError(f"`shrinkage` must be a finite number >= 0; got {plain(value)!r}.")
+    return float(value)
+
+
+def _rms_scale(scores: np.ndarray, wn: np.ndarray) -> float:
+    """Weighted root-mean-square of the row-centred logits; binary log-odds ``s`` count as the
+    two logits ``[-s/2, s/2]`` (the same map as a two-column input)."""
+    if scores.ndim == 1:
+        square = 0.25 * scores**2
+    else:
+        square = np.mean((scores - scores.mean(axis=1, keepdims=True)) ** 2, axis=1)
+    return float(np.sqrt(wn @ square))
 
 
 class TemperatureMap(CalibrationMap):
@@ -148,31 +189,53 @@ class TemperatureMap(CalibrationMap):
     ``T > 1`` softens over-confident scores, ``T < 1`` sharpens them; the order of the scores
     (and so the arg-max class) never changes.
 
-    ``T`` minimises the weighted log loss, by default against smoothed targets: the true class
-    gets Platt's (1999) ``(N_y + 1) / (N_y + 2)`` and the other ``k - 1`` classes share the
-    remaining ``1 / (N_y + 2)`` equally, where ``N_y`` is the weighted count of the row's class
-    (the true-class target is the one one-vs-rest Platt scaling uses). Smoothing keeps ``T``
-    finite when the scores separate the classes, and outputs are kept at least
-    ``floor_ = 1 / (N + k)`` (``N`` the total weight). The loss is convex in ``1 / T``, so the minimum is
-    unique and is the root of the loss's derivative with respect to ``1 / T``; the root is found
-    on ``log T`` by Newton's method safeguarded by bisection (tolerance 1e-14), which stays
-    precise even where the loss itself is flat. The search covers ``exp(+-16)`` times the
-    root-mean-square score; when the best ``T`` lies beyond an end (scores unrelated to or
-    against the labels, or raw labels separated perfectly) the map warns, uses that end and
-    records ``boundary_``.
+    ``T`` minimises the weighted log loss against the labels (Guo et al. 2017) plus a weak
+    penalty, a gamma prior on the inverse temperature ``beta = 1 / T`` worth ``shrinkage``
+    rows::
+
+        sum_i w_i * CE(y_i, q_i) + shrinkage * (beta / beta0 - log(beta / beta0) - 1)
+
+    with its mode ``beta0`` at the temperature that gives the scores a root-mean-square of one
+    (so the fit does not depend on the units of the scores: ``T(c s) = c T(s)``). On any data
+    with a few misranked rows the loss term dominates and the prior changes ``T`` very little;
+    when the scores separate the classes, where the unpenalised loss falls toward 0 as
+    ``T -> 0`` and has no minimum, the prior stops the sharpening where the least separated
+    calibration rows keep an error probability of the order of ``1 / n``. Outputs are kept at
+    least ``floor_ = 1 / (2 (N + 1) (k - 1))`` (``N`` the total weight): the
+    Krichevsky-Trofimov (1981) add-one-half estimate of the probability of an error after
+    ``N`` rows without one, shared by the ``k - 1`` other classes.
+
+    With ``smooth_targets=True`` the labels are replaced by smoothed targets instead: the true
+    class gets Platt's (1999) ``(N_y + 1) / (N_y + 2)`` and the other ``k - 1`` classes share
+    the remaining ``1 / (N_y + 2)`` equally (``N_y`` the weighted count of the row's class),
+    with the floor ``1 / (N + k)`` of Laplace's rule of succession. That bounds the fit as
+    well, but pulls every row, however clearly scored, toward the cap, and so costs far more
+    log loss on accurate models (see ``docs/calibration.md``); it is no longer the default.
+
+    The penalised loss is convex in ``1 / T``, so the minimum is unique and is the root of the
+    derivative with respect to ``1 / T``; the root is found on ``log T`` by Newton's method
+    safeguarded by bisection (tolerance 1e-14), which stays precise even where the loss itself
+    is flat. The search covers ``exp(+-16)`` times the root-mean-square score; when the best
+    ``T`` lies beyond an end (scores unrelated to or against the labels, or, without any
+    regularisation, raw labels separated perfectly) the map warns, uses that end and records
+    ``boundary_``.
 
     Parameters
     ----------
-    smooth_targets : bool, default=True
-        Fit the smoothed targets (and floor the output); ``False`` fits the raw labels, as in
-        Guo et al. (2017).
+    smooth_targets : bool, default=False
+        Fit Platt-style smoothed targets (and floor the output at ``1 / (N + k)``) instead of
+        the labels.
+    shrinkage : float, default=0.5
+        Weight of the gamma prior, in rows. ``0`` with ``smooth_targets=False`` gives the
+        unregularised fit of Guo et al. (2017), which runs off to ``T -> 0`` on separated
+        scores (``boundary_`` is then set) and has no output floor.
 
     Attributes
     ----------
     temperature_ : float
         Fitted temperature ``T``.
     floor_ : float
-        Smallest output probability (0 without smoothing).
+        Smallest output probability (0 without regularisation).
     boundary_ : str or None
         Set when the best temperature lies at an end of the search range.
     classes_ : ndarray
@@ -182,13 +245,15 @@ class TemperatureMap(CalibrationMap):
     ----------
     C. Guo, G. Pleiss, Y. Sun and K. Q. Weinberger (2017), "On calibration of modern neural
     networks", ICML, section 4.2.
+    R. Krichevsky and V. Trofimov (1981), "The performance of universal encoding", IEEE
+    Transactions on Information Theory 27(2) (the add-one-half estimate).
 
     Examples
     --------
     >>> import numpy as np
     >>> from probwrap.calibration import TemperatureMap
     >>> z = np.array([[4.0, 0.0, 0.0], [0.0, 4.0, 0.0], [0.0, 0.0, 4.0], [4.0, 0.0, 0.0]])
-    >>> m = TemperatureMap(smooth_targets=False).fit(z, [0, 1, 2, 1])
+    >>> m = TemperatureMap(shrinkage=0).fit(z, [0, 1, 2, 1])
     >>> round(m.temperature_, 4)
     2.2324
 
@@ -197,25 +262,27 @@ class TemperatureMap(CalibrationMap):
     >>> m.predict(z[:1]).round(3)
     array([[0.75 , 0.125, 0.125]])
 
-    Smoothed (the default), the targets on the top-scored class are 2/3, 3/4, 2/3 and 1/8 (the
-    last row is wrong); the best confidence is their mean, 53/96: four rows support no more.
+    Smoothed, the targets on the top-scored class are 2/3, 3/4, 2/3 and 1/8 (the last row is
+    wrong); the best confidence is their mean, 53/96: four rows support no more.
 
-    >>> TemperatureMap().fit(z, [0, 1, 2, 1]).predict(z[:1]).round(3)
+    >>> TemperatureMap(smooth_targets=True, shrinkage=0).fit(z, [0, 1, 2, 1]).predict(z[:1]).round(3)
     array([[0.552, 0.224, 0.224]])
     """
 
     supports_multiclass = True
     complexity = 1.0
 
-    def __init__(self, *, smooth_targets: bool = True) -> None:
+    def __init__(self, *, smooth_targets: bool = False, shrinkage: float = 0.5) -> None:
         self.smooth_targets = smooth_targets
+        self.shrinkage = shrinkage
 
     def _uses_counts(self) -> bool:
-        return bool(self.smooth_targets)
+        return bool(self.smooth_targets) or _valid_shrinkage(self.shrinkage) > 0
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         if not isinstance(self.smooth_targets, (bool, np.bool_)):
             raise ValueError(f"`smooth_targets` must be True or False; got {plain(self.smooth_targets)!r}.")
+        shrinkage = _valid_shrinkage(self.shrinkage)
         k = 2 if scores.ndim == 1 else scores.shape[1]
         counts = None
         if self.smooth_targets:
@@ -225,6 +292,12 @@ class TemperatureMap(CalibrationMap):
             # near the largest double changes no target and keeps the sums finite
             counts = np.minimum(counts, 2.0**1000)
             self._set_floor(w, k)
+        elif shrinkage > 0:
+            self._set_floor(w, k, rule="half")
+        with np.errstate(over="ignore"):
+            # the prior's weight per unit of weight (the loss is a weighted mean); 0 beyond the
+            # double range, where a prior worth a few rows does not matter
+            lam = shrinkage / float(w.sum())
         # The loss depends on scores / T only, so T(c s) = c T(s): fit on scores divided by a
         # power of two (exact) near their largest magnitude, where squares cannot overflow, and
         # scale the temperature back. Weights enter as a weighted mean: scaled the same way.
@@ -232,37 +305,37 @@ class TemperatureMap(CalibrationMap):
         scores = scores / unit
         w = w / power_of_two_unit(w)
         wn = w / w.sum()
-        if scores.ndim == 1:
-            square = scores**2
-        else:
-            square = np.mean((scores - scores.mean(axis=1, keepdims=True)) ** 2, axis=1)
-        scale = float(np.sqrt(wn @ square))
+        scale = _rms_scale(scores, wn)
         if scale == 0.0:
             # every score is the same (per row): the temperature has no effect on the output
             self.temperature_ = 1.0
             return
-        # search log(beta) = -log(T) within exp(+-_LOG_SPAN) of 1 / scale
+        # search log(beta) = -log(T) within exp(+-_LOG_SPAN) of 1 / scale, the prior's mode
         lo, hi = -np.log(scale) - _LOG_SPAN, -np.log(scale) + _LOG_SPAN
         target = _target_scores(scores, y, counts)
-        log_beta, end = _root_log_beta(scores, target, wn, lo, hi, -np.log(scale))
-        at_end = end is not None
+        log_beta, end = _root_log_beta(
+            scores, target, wn, lo, hi, -np.log(scale), (lam, 1.0 / scale)
+        )
+        self._set_temperature(-float(log_beta), unit, end)
+
+    def _set_temperature(self, log_t: float, unit: float, end: str | None) -> None:
+        """Store ``T = exp(log_t) * unit``; warn and record ``boundary_`` at a range end."""
         if end == "lo":  # scores unrelated to (or against) the labels
             self.boundary_ = "temperature at the high end of its search range (flat output)"
         elif end == "hi":  # classes separated perfectly
             self.boundary_ = "temperature at the low end of its search range (sharpest output)"
-        log_t = -float(log_beta)
         with np.errstate(over="ignore"):
             temperature = np.exp(log_t) * unit
         # beyond the double range only for scores near the largest or smallest double whose best
         # T is larger or smaller still; the nearest double gives the same saturated probabilities
         temperature = float(np.clip(temperature, np.nextafter(0.0, 1.0), np.finfo(float).max))
-        if at_end:
+        if end is not None:
             warnings.warn(
                 "TemperatureMap: the best temperature lies at the end of the search range "
                 f"(T = {temperature:.3g}); the scores are either unrelated to the labels or "
                 "separate the classes perfectly.",
                 UserWarning,
-                stacklevel=3,
+                stacklevel=4,
             )
         self.temperature_ = temperature
 

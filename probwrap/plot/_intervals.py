@@ -12,7 +12,7 @@ from sklearn.utils import check_random_state
 
 from .._validation import plain
 
-__all__ = ["wilson_interval", "consistency_band"]
+__all__ = ["wilson_interval", "consistency_band", "bin_counts"]
 
 
 def _check_level(confidence_level: Any) -> float:
@@ -77,8 +77,8 @@ def wilson_interval(
     return np.clip(low, 0.0, 1.0), np.clip(high, 0.0, 1.0)
 
 
-def _frequencies(sample_weight: Any, n: int) -> np.ndarray:
-    """Weights as row frequencies (see :func:`consistency_band`)."""
+def _frequencies(sample_weight: Any, n: int, what: str) -> tuple[np.ndarray, bool]:
+    """Weights as row frequencies (see :func:`consistency_band`), and whether rescaled."""
     from ..calibration._base import WeightScaleWarning, count_weights
 
     w = np.asarray(sample_weight, dtype=float)
@@ -94,10 +94,26 @@ def _frequencies(sample_weight: Any, n: int) -> np.ndarray:
         warnings.warn(
             "`sample_weight` sums to less than the number of rows it weights, so it cannot be "
             "row frequencies; it was rescaled to sum to Kish's effective sample size "
-            "(equal weights become 1 each) for the consistency band.",
-            WeightScaleWarning, stacklevel=3,
+            f"(equal weights become 1 each) for {what}.",
+            WeightScaleWarning, stacklevel=4,
         )
-    return w
+    return w, rescaled
+
+
+def bin_counts(bin_weight: Any, sample_weight: Any) -> np.ndarray:
+    """Per-bin totals on the row-count scale, the ``n`` of a Wilson interval.
+
+    Weights are row frequencies and are used as given; weights that sum to less than the
+    number of rows they weight cannot be frequencies and are rescaled, as the maps do, to sum to
+    Kish's effective sample size (equal weights become 1 each), with a
+    :class:`~probwrap.calibration.WeightScaleWarning`.
+    """
+    bin_weight = np.asarray(bin_weight, dtype=float)
+    if sample_weight is None:
+        return bin_weight
+    w = np.asarray(sample_weight, dtype=float)
+    counted, rescaled = _frequencies(w, w.shape[0], "the interval counts")
+    return bin_weight * (counted.sum() / w.sum()) if rescaled else bin_weight
 
 
 def consistency_band(
@@ -165,7 +181,8 @@ def consistency_band(
     idx = idx.astype(np.intp)
     if idx.size and (idx.min() < 0 or idx.max() >= n_bins):
         raise ValueError(f"`bin_index` must lie in [0, {n_bins}).")
-    w = np.ones_like(p) if sample_weight is None else _frequencies(sample_weight, p.shape[0])
+    w = (np.ones_like(p) if sample_weight is None
+         else _frequencies(sample_weight, p.shape[0], "the consistency band")[0])
     rng = check_random_state(random_state)
     weight = np.bincount(idx, weights=w, minlength=n_bins)
     # a row of weight m + f: m outcomes of its own (one binomial draw) and one weighing f

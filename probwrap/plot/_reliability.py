@@ -9,7 +9,7 @@ import numpy as np
 from .._validation import plain
 from ..metrics import expected_calibration_error, reliability_table
 from ._common import binary_labels, class_proba, estimator_classes
-from ._intervals import consistency_band, wilson_interval
+from ._intervals import bin_counts, consistency_band, wilson_interval
 from ._style import PALETTE, new_axes, style_axes
 
 __all__ = ["ReliabilityDiagram"]
@@ -334,9 +334,8 @@ class ReliabilityDiagram:
 def _bands(table, values, band, sample_weight, confidence_level, n_draws, random_state):
     """Per-bin Wilson interval, consistency band, or NaN (no band)."""
     if band == "wilson":
-        return wilson_interval(
-            table.observed_frequency * table.weight, table.weight, confidence_level
-        )
+        n = bin_counts(table.weight, sample_weight)
+        return wilson_interval(table.observed_frequency * n, n, confidence_level)
     if band == "consistency":
         # for the top-label form each row's outcome (top class correct) would be a Bernoulli
         # draw with its confidence if calibrated, so the same simulation applies to `values`

@@ -18,7 +18,7 @@ from ..metrics import (
     net_benefit_treat_all,
     reliability_table,
 )
-from ..plot._intervals import wilson_interval
+from ..plot._intervals import bin_counts, wilson_interval
 from ..plot._style import PALETTE
 from ._svg_axes import nice_ticks
 from ._svg_charts import Chart
@@ -77,7 +77,8 @@ def reliability_svg(
         ece = expected_calibration_error(y_true, p, n_bins=n_bins,
                                          sample_weight=sample_weight, labels=[0.0, 1.0])
         form, ylabel, xlabel = "", "observed frequency", "mean forecast probability"
-    low, high = wilson_interval(table.observed_frequency * table.weight, table.weight, level)
+    n = bin_counts(table.weight, sample_weight)
+    low, high = wilson_interval(table.observed_frequency * n, n, level)
     chart = Chart(
         key, title=f"Reliability{form} (calibration error {ece:.4f})", width=540, height=500,
         description=f"Observed frequency against mean forecast in {n_bins} equal-width bins, "

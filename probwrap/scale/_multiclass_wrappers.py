@@ -59,7 +59,7 @@ def _class_weight_terms(block, k):
 def _square_terms(block):
     s, _, w = block
     square = np.mean((s - s.mean(axis=1, keepdims=True)) ** 2, axis=1)
-    return np.array([w @ square, w.sum()])
+    return np.array([w @ square, w.sum(), w @ w, np.count_nonzero(w)])
 
 
 def _ovr_tallies_block(owner, resolution, Xb, yb, wb):
@@ -88,7 +88,13 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     from sklearn.base import clone
 
     from .._predictions import resolve_response
-    from ..calibration._temperature import _LOG_SPAN, TemperatureMap
+    from ..calibration._base import WeightScaleWarning
+    from ..calibration._temperature import (
+        _LOG_SPAN,
+        TemperatureMap,
+        _prior_slope,
+        _valid_shrinkage,
+    )
     from ._dask import (
         _aligned_blocks,
         _frozen_multiclass,
@@ -119,29 +125,55 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
             dask, [make(owner, template, b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
         )
         try:
-            sq, total = _reduce(dask, _square_terms, parts)
+            sq, total, total_sq, n_rows = _reduce(dask, _square_terms, parts)
             if total <= 0:
                 raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
             cal = clone(template)
             cal.classes_ = np.arange(k)
             cal.n_classes_ = k
             cal.n_score_columns_ = k
+            cal.boundary_ = None
+            cal.floor_ = 0.0
+            shrinkage = _valid_shrinkage(template.shrinkage)
+            # weights on the row-count scale, as TemperatureMap.fit puts them (count_weights):
+            # kept when they sum to at least the number of rows of positive weight, else
+            # rescaled to Kish's effective sample size; only the counts below use the scale
+            count_scale = 1.0
+            if (template.smooth_targets or shrinkage > 0) and total < n_rows:
+                count_scale = (total / total_sq) if total_sq > 0 else 1.0
+                warnings.warn(
+                    "TemperatureMap: `sample_weight` sums to less than the number of rows, so "
+                    "the weights cannot be row frequencies; they are rescaled to sum to Kish's "
+                    f"effective sample size ({total * count_scale:.4g}) for the map's counts.",
+                    WeightScaleWarning,
+                    stacklevel=3,
+                )
+            n_eff = total * count_scale
+            counts = None
+            if template.smooth_targets:
+                # smoothed targets need the weighted class counts (see TemperatureMap)
+                counts = _reduce(dask, _class_weight_terms, parts, k) * count_scale
+                cal._set_floor(np.array([n_eff]), k)
+            elif shrinkage > 0:
+                cal._set_floor(np.array([n_eff]), k, rule="half")
             scale = float(np.sqrt(sq / total))
             if scale == 0.0:
                 cal.temperature_ = 1.0
                 return cal
             lo, hi = -np.log(scale) - _LOG_SPAN, -np.log(scale) + _LOG_SPAN
-            counts = None
-            if template.smooth_targets:
-                # smoothed targets need the weighted class counts (see TemperatureMap)
-                counts = _reduce(dask, _class_weight_terms, parts, k)
-                cal.floor_ = float(1.0 / (total + k))
+            lam = shrinkage / n_eff
 
             def slope(log_beta: float) -> float:
-                return float(_reduce(dask, _temperature_terms, parts, log_beta, total, counts)[0])
+                data = float(_reduce(dask, _temperature_terms, parts, log_beta, total, counts)[0])
+                return data + _prior_slope(float(np.exp(log_beta)), lam, 1.0 / scale)[0]
 
             if slope(lo) >= 0 or slope(hi) <= 0:
                 log_beta = lo if slope(lo) >= 0 else hi
+                cal.boundary_ = (
+                    "temperature at the "
+                    + ("high end of its search range (flat output)" if log_beta == lo
+                       else "low end of its search range (sharpest output)")
+                )
                 warnings.warn(
                     "TemperatureMap: the best temperature lies at the end of the search range; "
                     "the scores are either unrelated to the labels or separate the classes "
@@ -175,13 +207,22 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     for tally in merged:
         pos = tally.label_weight[1]
         if pos <= 0 or pos >= tally.total_weight:
-            maps.append(float(pos > 0))
+            # absent from (or alone in) the rows: its smoothed share, (N_k + 1) / (N + k) by the
+            # rule of succession with the weights on the row-count scale (as in memory: kept
+            # when they sum to at least the number of rows, else Kish's effective size), so
+            # never exactly 0 or 1
+            total = tally.total_weight
+            n_eff = total if total >= tally.n_rows else tally.effective_rows
+            if not np.isfinite(n_eff) or n_eff <= 0:
+                n_eff = float(tally.n_rows)
+            maps.append(float((pos * (n_eff / total) + 1.0) / (n_eff + k)))
             continue
         s, yk, wk = tally.to_rows()
         maps.append(clone(template).fit(owner._map_input(template, s), yk, sample_weight=wk))
     if any(isinstance(m, float) for m in maps):
         warnings.warn(
-            "Some classes have no held-out rows; their calibrated probability is set to 0.",
+            "Some classes have no held-out rows; their calibrated probability is set to "
+            "1 / (N + k) (N the held-out weight, k the number of classes).",
             UserWarning,
             stacklevel=3,
         )
