@@ -98,7 +98,9 @@ def _binary_labelled(n, season, seed, text_labels=False):
     import pandas as pd
 
     labels = np.where(s.target == 1, "yes", "no") if text_labels else s.target
-    return pd.DataFrame({"risk": model.predict_proba(s.data)[:, 1], "damaged": labels})
+    size = np.select([s.data[:, 0] < 1.5, s.data[:, 0] < 6.0], ["light", "medium"], "heavy")
+    return pd.DataFrame({"risk": model.predict_proba(s.data)[:, 1], "damaged": labels,
+                         "size": size})
 
 
 def _three_way(n, season, seed, labelled):

@@ -5,6 +5,7 @@ from ._beta import BetaMap
 from ._binning import BinningMap
 from ._isotonic import IsotonicMap
 from ._logodds import DEFAULT_CLIP, log_odds_to_proba, proba_to_log_odds, proba_to_log_proba
+from ._multicalibration import MulticalibrationMap
 from ._platt import PlattMap
 from ._serialize import MAP_SCORE_SCALES, map_from_dict, map_score_scale, map_to_dict
 from ._temperature import TemperatureMap
@@ -19,6 +20,7 @@ __all__ = [
     "IsotonicMap",
     "MAP_SCORE_SCALES",
     "MatrixScalingMap",
+    "MulticalibrationMap",
     "NONPARAMETRIC",
     "PlattMap",
     "TemperatureMap",

@@ -98,6 +98,10 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--bins", type=_bins, default=10, metavar="K",
                         help=f"reliability bins (default 10, at most {MAX_BINS})")
     add_resamples_flag(parser, allow_zero=False)
+    parser.add_argument("--group-column", metavar="G",
+                        help="binary files: column of group labels (e.g. depot); adds a 'By "
+                        "group' section with calibration, scores and the rule's error rates "
+                        "and cost per group, largest gaps first")
     parser.add_argument("--seed", type=int, default=0, help="bootstrap seed (default 0)")
     parser.add_argument("--title", default="probwrap report", help="report title")
     parser.add_argument("--out", required=True, metavar="FILE",
@@ -235,6 +239,20 @@ def _class_labels(frame, args: argparse.Namespace, columns: list[str]) -> np.nda
     return y.astype(np.intp)
 
 
+def _group_labels(frame, column: str, path: str) -> np.ndarray:
+    """The --group-column as text labels; an empty cell is refused (never silently dropped)."""
+    if column not in frame.columns:
+        raise DataError(f"{path}: no column {shown(column)} (--group-column); the columns are "
+                        f"{', '.join(shown(str(c)) for c in frame.columns)}")
+    raw = frame[column]
+    missing = raw.isna().to_numpy()
+    if missing.any():
+        row = int(np.flatnonzero(missing)[0])
+        raise DataError(f"{path}: column {shown(column)}, row {row + 2} (counting the header as "
+                        f"row 1) has no group; give every row a group (e.g. 'unknown')")
+    return raw.astype(str).to_numpy()
+
+
 def _build_and_write(args: argparse.Namespace, stages: Stages, **inputs):
     """Compute the report, then write it atomically; library errors become DataErrors."""
     from probwrap.report import build_report
@@ -282,6 +300,8 @@ def _handler(args: argparse.Namespace) -> int:
     if (args.score_column is None) == (args.class_columns is None):
         parser.error("give either --score-column (binary) or --class-columns (one per class)")
     if args.class_columns is not None:
+        if args.group_column is not None:
+            parser.error("--group-column is available with --score-column (binary) only")
         return _class_handler(args, parser)
     if args.cost_matrix is not None or args.actions is not None or args.capacity_action:
         parser.error("--cost-matrix, --actions and --capacity-action need --class-columns")
@@ -331,11 +351,14 @@ def _handler(args: argparse.Namespace) -> int:
             q = None if q is None else log_odds_to_proba(q)
         if [str(v) for v in labels] != ["0", "1"]:  # say on the page which class is positive
             args.title = f"{args.title} (positive class: {labels[1]})"
+        extra = {}
+        if args.group_column is not None:
+            extra["groups"] = _group_labels(frame, args.group_column, args.scores)
         content = _build_and_write(
             args, stages, y_true=y, y_prob=p, costs=costs, capacity=args.capacity,
             unlabelled_prob=q, batch_size=args.batch_size,
             class_names=None if [str(v) for v in labels] == ["0", "1"] else [
-                str(v) for v in labels],
+                str(v) for v in labels], **extra,
         )
     summary = {"out": args.out, "n_rows": int(content.n_rows),
                "labels": {"negative": labels[0], "positive": labels[1]}}

@@ -8,7 +8,9 @@ something is drawn; figures are created without pyplot, so no window opens.
 """
 
 from ._actions import ActionShareDisplay
+from ._corp import IsotonicReliabilityDiagram
 from ._cost import CostCurveDisplay
+from ._cost_space import CostRangeDisplay, GainChartDisplay
 from ._decision_curve import DecisionCurveDisplay
 from ._intervals import consistency_band, wilson_interval
 from ._prevalence import ClassPriorDisplay, PrevalenceDriftDisplay
@@ -20,7 +22,10 @@ __all__ = [
     "ActionShareDisplay",
     "ClassPriorDisplay",
     "CostCurveDisplay",
+    "CostRangeDisplay",
     "DecisionCurveDisplay",
+    "GainChartDisplay",
+    "IsotonicReliabilityDiagram",
     "PrevalenceDriftDisplay",
     "ReliabilityDiagram",
     "consistency_band",

@@ -66,6 +66,7 @@ def write_report(
     row_costs: Any = None,
     class_names: Any = None,
     progress: Any = None,
+    groups: Any = None,
 ) -> ReportContent | MulticlassReportContent:
     """Write a self-contained HTML report and return the numbers it shows.
 
@@ -149,6 +150,12 @@ def write_report(
         "calibration metrics", "decision rules", "prevalence", "prevalence by batch") and once
         more as ``("done", total, total)``; for a progress display.
 
+    groups : array-like of shape (n,), optional
+        Binary reports: a group label per labelled row; adds a "By group" section with
+        :func:`probwrap.metrics.calibration_by_group` (calibration, scores with intervals and
+        the chosen rule's share acted on, error rates and mean cost per group, largest gaps
+        first, groups too small to judge marked). In ``content.group_checks``.
+
     Returns
     -------
     ReportContent or MulticlassReportContent
@@ -186,7 +193,7 @@ def write_report(
         unlabelled_prob=unlabelled_prob, X_unlabelled=X_unlabelled, prior_shift=prior_shift,
         batch_size=batch_size, n_bins=n_bins, n_resamples=n_resamples,
         confidence_level=confidence_level, random_state=random_state, title=title,
-        row_costs=row_costs, class_names=class_names, progress=progress,
+        row_costs=row_costs, class_names=class_names, progress=progress, groups=groups,
     )
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)

@@ -95,6 +95,7 @@ class ReportContent:
     notes: list[ReportNote] = field(default_factory=list)
     recommendation: Recommendation | None = None
     class_names: tuple[str, str] = ("negative", "positive")
+    group_checks: Any = None
 
 
 def _inner_chain(model: Any) -> list[Any]:
@@ -205,6 +206,7 @@ def collect_content(
     row_costs: Any = None,
     class_names: Any = None,
     progress: ProgressCallback | None = None,
+    groups: Any = None,
 ) -> Any:
     """Compute the report's numbers; see :func:`probwrap.report.write_report`.
 
@@ -226,6 +228,9 @@ def collect_content(
         class_names=class_names, progress=progress,
     )
     if general is not None:
+        if groups is not None:
+            raise ValueError("`groups` is available for binary reports (two classes, two "
+                             "actions) only.")
         return general
 
     if model is not None:
@@ -394,6 +399,16 @@ def collect_content(
             for row in content.rules:
                 target_columns(row, q, E, cap)
     content.notes = notes.notes
+    if groups is not None:
+        from ..metrics import calibration_by_group
+
+        cutoff = content.chosen_cutoff
+        content.group_checks = calibration_by_group(
+            y01, p, groups, cutoff=cutoff,
+            costs=content.cost_matrix if cutoff is not None else None, sample_weight=w,
+            n_resamples=n_resamples, confidence_level=confidence_level,
+            random_state=int(rng.randint(0, 2**31 - 1)),
+        )
     step("done", 4)
     return content
 

@@ -13,6 +13,7 @@ from ..plot import (
 )
 from ._content import BAYES_NAME, HALF_NAME, ReportContent
 from ._general_html import general_figures, general_glance, general_sections
+from ._groups_html import group_section
 from ._html_parts import (
     _figure,
     _num,
@@ -374,7 +375,7 @@ def render_html(c: Any, figures: dict[str, str]) -> str:
         body = general_sections(c, figures)
     else:
         body = (_calibration_section(c, figures) + _decision_section(c, figures)
-                + _prevalence_section(c, figures))
+                + _prevalence_section(c, figures) + group_section(c))
     return (
         '<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">'
         '<meta name="viewport" content="width=device-width, initial-scale=1">'
@@ -386,7 +387,8 @@ def render_html(c: Any, figures: dict[str, str]) -> str:
         '<a href="#decisions">Decisions</a><a href="#prevalence">'
         + ("Class shares" if getattr(c, "kind", "binary") == "general" else "Prevalence")
         + "</a>"
-        '<a href="#cautions">Cautions</a></nav><main>'
+        + ('<a href="#by-group">By group</a>' if getattr(c, "group_checks", None) else "")
+        + '<a href="#cautions">Cautions</a></nav><main>'
         + _glance(c)
         + recommendation_box(c)
         + body

@@ -1,0 +1,388 @@
+"""Calibration, scores and a decision rule's outcomes, group by group.
+
+The question a reviewer asks of a model that acts on people or things in different groups (depots,
+regions, product lines, or groups protected by law): are the probabilities equally trustworthy in
+every group, and does the same cutoff treat the groups alike? :func:`calibration_by_group` answers
+both in one table, with intervals, the largest gaps between groups first, and the groups too small
+to judge marked rather than dropped.
+"""
+
+from __future__ import annotations
+
+import numbers
+import warnings
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .._validation import check_same_length, plain
+from ._bootstrap import bootstrap_interval
+from ._calibration_tests import smooth_calibration_error
+from ._inputs import prepare_binary
+from ._scores import brier_score, log_loss
+from ._slope import calibration_slope_intercept
+
+__all__ = ["GroupCheck", "GroupGap", "GroupChecks", "calibration_by_group"]
+
+#: Default smallest group judged: 100 effective rows and 10 effective rows of each class. Common
+#: practice (rules of thumb for fitting and validating a logistic model: about 10 events per
+#: estimated parameter, and at least 100 events for a precise validation), not a law.
+MIN_ROWS = 100
+MIN_EVENTS = 10
+
+_GAP_METRICS = (
+    "calibration_error", "calibration_intercept", "calibration_slope", "brier", "log_loss",
+    "share_acted_on", "false_positive_rate", "false_negative_rate", "mean_cost",
+)
+
+
+@dataclass(frozen=True)
+class GroupCheck:
+    """Checks for one group (NaN where a quantity cannot be computed, e.g. one class only).
+
+    Attributes
+    ----------
+    group : object
+        The group label.
+    weight : float
+        Total weight (the row count when unweighted).
+    effective_rows, effective_positives, effective_negatives : float
+        Kish's effective sizes ``(sum w)^2 / sum w^2`` of the group and of its two classes; equal
+        to the counts when every weight is 1, and unchanged when all weights are scaled.
+    judged : bool
+        Whether the group reaches ``min_rows`` and ``min_events``; groups not judged are listed
+        but left out of the gaps.
+    observed_rate, mean_forecast : float
+        Weighted share of positives, weighted mean forecast.
+    calibration_error : float
+        Smooth ECE (:func:`smooth_calibration_error`).
+    calibration_slope, calibration_intercept : float
+        Cox's slope and calibration-in-the-large (:func:`calibration_slope_intercept`).
+    brier, log_loss : float
+        Mean scores.
+    brier_interval, log_loss_interval : tuple of float
+        Percentile bootstrap intervals (rows resampled within the group).
+    share_acted_on, false_positive_rate, false_negative_rate, mean_cost : float
+        For the decision rule "act when ``p > cutoff``" (NaN without a cutoff; ``mean_cost`` NaN
+        without costs): the weighted share acted on, the share of negatives acted on, the share
+        of positives not acted on, and the mean cost per row.
+    """
+
+    group: Any
+    weight: float
+    effective_rows: float
+    effective_positives: float
+    effective_negatives: float
+    judged: bool
+    observed_rate: float
+    mean_forecast: float
+    calibration_error: float
+    calibration_slope: float
+    calibration_intercept: float
+    brier: float
+    brier_interval: tuple[float, float]
+    log_loss: float
+    log_loss_interval: tuple[float, float]
+    share_acted_on: float = float("nan")
+    false_positive_rate: float = float("nan")
+    false_negative_rate: float = float("nan")
+    mean_cost: float = float("nan")
+
+
+@dataclass(frozen=True)
+class GroupGap:
+    """The spread of one quantity across the judged groups.
+
+    Attributes
+    ----------
+    metric : str
+        Name of a :class:`GroupCheck` field.
+    gap : float
+        Largest minus smallest value over the judged groups (for the slope: on the log scale,
+        ``|log(slope_max / slope_min)|``, since a slope of 0.5 is as far from 1 as 2 is).
+    highest, lowest : object
+        The groups holding the largest and smallest value.
+    """
+
+    metric: str
+    gap: float
+    highest: Any
+    lowest: Any
+
+
+@dataclass(frozen=True)
+class GroupChecks:
+    """Outcome of :func:`calibration_by_group`.
+
+    Attributes
+    ----------
+    groups : list of GroupCheck
+        Judged groups first, by calibration error (largest first); then the groups too small to
+        judge, by size.
+    gaps : list of GroupGap
+        The spread of each quantity across the judged groups, largest first. Quantities differ
+        in scale, so the order uses each gap divided by ``max(|overall value|, 0.05)`` (the log
+        ratio itself for the slope); ``gap`` holds the unscaled difference.
+    overall : GroupCheck
+        The same checks on all rows together (its ``group`` is ``"all"``).
+    cutoff : float or None
+    min_rows, min_events : float
+    """
+
+    groups: list[GroupCheck]
+    gaps: list[GroupGap]
+    overall: GroupCheck
+    cutoff: float | None
+    min_rows: float
+    min_events: float
+    notes: list[str] = field(default_factory=list)
+
+    def to_frame(self):
+        """The per-group table as a pandas DataFrame (needs pandas, in the ``cli`` extra)."""
+        import pandas as pd
+
+        rows = []
+        for g in [*self.groups, self.overall]:
+            d = dict(g.__dict__)
+            d["brier_low"], d["brier_high"] = d.pop("brier_interval")
+            d["log_loss_low"], d["log_loss_high"] = d.pop("log_loss_interval")
+            rows.append(d)
+        return pd.DataFrame(rows)
+
+
+def _kish(w: np.ndarray) -> float:
+    s2 = float(np.dot(w, w))
+    return float(w.sum() ** 2 / s2) if s2 > 0 else 0.0
+
+
+def _safe(fn, *args, **kwargs) -> float:
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", UserWarning)
+            return float(fn(*args, **kwargs))
+    except ValueError:
+        return float("nan")
+
+
+def _interval(metric, y, p, w, n_resamples, level, seed) -> tuple[float, float]:
+    if n_resamples == 0 or np.count_nonzero(w) < 2:
+        return (float("nan"), float("nan"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        try:
+            res = bootstrap_interval(metric, y, p, sample_weight=w, n_resamples=n_resamples,
+                                     confidence_level=level, random_state=seed)
+        except ValueError:
+            return (float("nan"), float("nan"))
+    return (float(res.confidence_interval.low), float(res.confidence_interval.high))
+
+
+def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples, level,
+               seed) -> GroupCheck:
+    pos = w * y
+    neg = w * (1.0 - y)
+    eff_rows, eff_pos, eff_neg = _kish(w), _kish(pos), _kish(neg)
+    judged = eff_rows >= min_rows and eff_pos >= min_events and eff_neg >= min_events
+    total = float(w.sum())
+    both = pos.sum() > 0 and neg.sum() > 0
+
+    def slope_parts():
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", UserWarning)
+                r = calibration_slope_intercept(y, p, sample_weight=w, labels=[0.0, 1.0])
+            return r.slope, r.intercept
+        except ValueError:
+            return float("nan"), float("nan")
+
+    slope, intercept = slope_parts() if both else (float("nan"), float("nan"))
+    decision = {}
+    if cutoff is not None:
+        act = p > cutoff
+        decision["share_acted_on"] = float(np.dot(w, act) / total)
+        decision["false_positive_rate"] = (float(np.dot(neg, act) / neg.sum()) if neg.sum() > 0
+                                           else float("nan"))
+        decision["false_negative_rate"] = (float(np.dot(pos, ~act) / pos.sum()) if pos.sum() > 0
+                                           else float("nan"))
+        if matrix is not None:
+            cell = matrix[y.astype(np.intp), act.astype(np.intp)]
+            decision["mean_cost"] = float(np.dot(w, cell) / total)
+    return GroupCheck(
+        group=label,
+        weight=total,
+        effective_rows=eff_rows,
+        effective_positives=eff_pos,
+        effective_negatives=eff_neg,
+        judged=bool(judged),
+        observed_rate=float(pos.sum() / total),
+        mean_forecast=float(np.dot(w, p) / total),
+        calibration_error=_safe(smooth_calibration_error, y, p, sample_weight=w,
+                                labels=[0.0, 1.0]),
+        calibration_slope=slope,
+        calibration_intercept=intercept,
+        brier=_safe(brier_score, y, p, sample_weight=w, labels=[0.0, 1.0]),
+        brier_interval=_interval(brier_score, y, p, w, n_resamples, level, seed),
+        log_loss=_safe(log_loss, y, p, sample_weight=w, labels=[0.0, 1.0]),
+        log_loss_interval=_interval(log_loss, y, p, w, n_resamples, level, seed),
+        **decision,
+    )
+
+
+def calibration_by_group(
+    y_true: Any,
+    y_prob: Any,
+    groups: Any,
+    *,
+    cutoff: float | None = None,
+    costs: Any = None,
+    sample_weight: Any = None,
+    labels: Any = None,
+    min_rows: float = MIN_ROWS,
+    min_events: float = MIN_EVENTS,
+    n_resamples: int = 200,
+    confidence_level: float = 0.95,
+    random_state: int | None = 0,
+) -> GroupChecks:
+    """Calibration, scores and the outcomes of a decision rule in every group.
+
+    For each group (and for all rows together) this reports the smooth calibration error, Cox's
+    calibration slope and calibration-in-the-large, the Brier score and log loss with percentile
+    bootstrap intervals (rows resampled within the group, :func:`bootstrap_interval`), and — for
+    the rule "act when ``y_prob > cutoff``" — the share acted on, the false-positive rate (share
+    of negatives acted on), the false-negative rate (share of positives missed) and, with
+    ``costs``, the mean cost per row. Then the spread of each quantity across the groups, largest
+    first.
+
+    A group is *judged* when its effective size reaches ``min_rows`` rows and ``min_events`` rows
+    of each class (Kish's effective sizes, so that scaling all weights changes nothing). Smaller
+    groups are still listed with every number that can be computed, flagged ``judged=False``,
+    and left out of the gaps: a gap between two tiny groups is mostly noise. The defaults (100
+    rows, 10 of each class) are common practice, not a law; a precise check of the slope needs
+    far more (hundreds of events).
+
+    Calibration being equal across groups is one notion of fairness among several that cannot
+    all hold at once when base rates differ (equal error rates is another); this table shows both
+    so the choice is made in the open. Decisions about people need the judgement of those
+    accountable for them and may fall under local law.
+
+    Parameters
+    ----------
+    y_true : array-like of shape (n,)
+        Binary labels (the second sorted, or ``labels[1]``, is positive).
+    y_prob : array-like of shape (n,)
+        Positive-class probabilities (two-column input uses the second column).
+    groups : array-like of shape (n,)
+        Group label of each row (any hashable values; missing values are not allowed).
+    cutoff : float in [0, 1], optional
+        The decision rule's cutoff; without it the decision columns are NaN.
+    costs : dict or array-like of shape (2, 2), optional
+        Cost matrix (rows: true class negative/positive; columns: not acted / acted) or the
+        binary shorthand ``{"tp", "fp", "fn", "tn"}``; needs ``cutoff``.
+    sample_weight : array-like of shape (n,), optional
+        Row frequencies: weight 2 counts a row twice.
+    labels : array-like of shape (2,), optional
+        ``[negative, positive]``.
+    min_rows, min_events : float, default=100, 10
+        Smallest effective group size, and smallest effective number of each class, judged.
+    n_resamples : int, default=200
+        Bootstrap resamples per group for the score intervals; 0 gives no intervals (NaN).
+    confidence_level : float, default=0.95
+    random_state : int or None, default=0
+        Seed of the bootstrap (the same seed in every group).
+
+    Returns
+    -------
+    GroupChecks
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.metrics import calibration_by_group
+    >>> rng = np.random.default_rng(0)
+    >>> g = rng.choice(["north", "south", "east"], size=3000, p=[0.5, 0.47, 0.03])
+    >>> p = rng.uniform(0.05, 0.6, size=3000)
+    >>> y = (rng.uniform(size=3000) < np.where(g == "south", 1.3 * p, p)).astype(int)
+    >>> res = calibration_by_group(y, p, g, cutoff=0.3, n_resamples=0)
+    >>> [(c.group, c.judged) for c in res.groups]
+    [('south', True), ('north', True), ('east', False)]
+    >>> res.gaps[0].metric, res.gaps[0].highest
+    ('calibration_intercept', 'south')
+    """
+    y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
+    g = np.asarray(groups)
+    if g.ndim == 2 and g.shape[1] == 1:
+        g = g[:, 0]
+    if g.ndim != 1:
+        raise ValueError(f"`groups` must be 1-d with one label per row; got shape {g.shape}.")
+    check_same_length(("y_prob", p), ("groups", g))
+    if g.dtype.kind == "f" and np.isnan(g).any():
+        raise ValueError("`groups` contains NaN; give every row a group (e.g. 'unknown').")
+    if g.dtype.kind == "O" and any(v is None or (isinstance(v, float) and np.isnan(v)) for v in g):
+        raise ValueError("`groups` contains missing values; give every row a group.")
+    if cutoff is not None and not (
+        isinstance(cutoff, numbers.Real) and not isinstance(cutoff, bool) and 0.0 <= cutoff <= 1.0
+    ):
+        raise ValueError(f"`cutoff` must be None or a number in [0, 1]; got {plain(cutoff)!r}.")
+    matrix = None
+    if costs is not None:
+        if cutoff is None:
+            raise ValueError("`costs` needs `cutoff`: the mean cost is that of the rule p > cutoff.")
+        from ..decision import check_cost_matrix
+
+        matrix = check_cost_matrix(costs, n_classes=2, n_actions=2)
+    for name, value in (("min_rows", min_rows), ("min_events", min_events)):
+        if isinstance(value, bool) or not isinstance(value, numbers.Real) or value < 0:
+            raise ValueError(f"`{name}` must be a number >= 0; got {plain(value)!r}.")
+    if (isinstance(n_resamples, bool) or not isinstance(n_resamples, numbers.Integral)
+            or n_resamples < 0 or n_resamples == 1):
+        raise ValueError(f"`n_resamples` must be 0 or a whole number >= 2; got {plain(n_resamples)!r}.")
+    keys, inverse = np.unique(g, return_inverse=True)
+    inverse = inverse.reshape(-1)
+    args = (cutoff, matrix, float(min_rows), float(min_events), int(n_resamples),
+            float(confidence_level), random_state)
+    checks = []
+    for k, key in enumerate(keys):
+        rows = inverse == k
+        label = key.item() if hasattr(key, "item") else key
+        checks.append(_check_one(label, y[rows], p[rows], w[rows], *args))
+    overall = _check_one("all", y, p, w, *args)
+    judged = sorted((c for c in checks if c.judged), key=lambda c: -np.nan_to_num(
+        c.calibration_error, nan=-1.0))
+    small = sorted((c for c in checks if not c.judged), key=lambda c: -c.weight)
+    gaps = _gaps(judged, overall)
+    notes = []
+    if small:
+        notes.append(
+            f"{len(small)} group(s) below {min_rows:g} effective rows or {min_events:g} of a class "
+            "are listed but not judged: " + ", ".join(str(c.group) for c in small) + "."
+        )
+    return GroupChecks(groups=judged + small, gaps=gaps, overall=overall, cutoff=cutoff,
+                       min_rows=float(min_rows), min_events=float(min_events), notes=notes)
+
+
+def _gaps(judged: list[GroupCheck], overall: GroupCheck) -> list[GroupGap]:
+    if len(judged) < 2:
+        return []
+    out = []
+    for metric in _GAP_METRICS:
+        values = np.array([getattr(c, metric) for c in judged], dtype=float)
+        ok = np.isfinite(values)
+        if metric == "calibration_slope":
+            ok &= values > 0
+        if ok.sum() < 2:
+            continue
+        v = values[ok]
+        names = [c.group for c, keep in zip(judged, ok, strict=True) if keep]
+        hi, lo = int(np.argmax(v)), int(np.argmin(v))
+        if metric == "calibration_slope":
+            gap = float(np.log(v[hi] / v[lo]))
+            scaled = gap
+        else:
+            gap = float(v[hi] - v[lo])
+            ref = abs(float(getattr(overall, metric)))
+            # the intercept and rates can be near 0 overall: scale by a floor of 0.05
+            scaled = gap / max(ref, 0.05)
+        out.append((scaled, GroupGap(metric=metric, gap=gap, highest=names[hi], lowest=names[lo])))
+    out.sort(key=lambda t: -t[0])
+    return [gap for _, gap in out]

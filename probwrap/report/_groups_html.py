@@ -1,0 +1,67 @@
+"""The report's "by group" section: calibration, scores and the decision rule in every group."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from ._html_parts import _text
+
+__all__ = ["group_section"]
+
+
+def _cell(value: float, digits: int = 4) -> str:
+    return "<td>&ndash;</td>" if value != value else f"<td>{value:.{digits}f}</td>"
+
+
+def _interval(pair: tuple[float, float]) -> str:
+    lo, hi = pair
+    return "<td>&ndash;</td>" if lo != lo else f"<td>[{lo:.4f}, {hi:.4f}]</td>"
+
+
+def group_section(c: Any) -> str:
+    """HTML for ``c.group_checks`` (a :class:`probwrap.metrics.GroupChecks`), or ``""``."""
+    checks = getattr(c, "group_checks", None)
+    if checks is None:
+        return ""
+    decision = checks.cutoff is not None
+    head = ("<th>group</th><th>rows</th><th>judged</th><th>observed rate</th>"
+            "<th>mean forecast</th><th>smooth ECE</th><th>slope</th><th>intercept</th>"
+            "<th>Brier</th><th>interval</th><th>log loss</th><th>interval</th>")
+    if decision:
+        head += ("<th>share acted on</th><th>false-positive rate</th>"
+                 "<th>false-negative rate</th><th>mean cost</th>")
+    rows = []
+    for g in [*checks.groups, checks.overall]:
+        judged = "yes" if g.judged else "<b>too small to judge</b>"
+        cells = [f"<td>{_text(str(g.group))}</td>", f"<td>{g.weight:.0f}</td>",
+                 f"<td>{judged}</td>", _cell(g.observed_rate), _cell(g.mean_forecast),
+                 _cell(g.calibration_error), _cell(g.calibration_slope, 3),
+                 _cell(g.calibration_intercept, 3), _cell(g.brier), _interval(g.brier_interval),
+                 _cell(g.log_loss), _interval(g.log_loss_interval)]
+        if decision:
+            cells += [_cell(g.share_acted_on), _cell(g.false_positive_rate),
+                      _cell(g.false_negative_rate), _cell(g.mean_cost)]
+        rows.append(f'<tr data-group="{_text(str(g.group))}">{"".join(cells)}</tr>')
+    gaps = "".join(
+        f"<li>{_text(x.metric.replace('_', ' '))}: {x.gap:.4f} (highest "
+        f"{_text(str(x.highest))}, lowest {_text(str(x.lowest))})</li>"
+        for x in checks.gaps
+    )
+    rule = (f" The decision columns are for the rule &ldquo;act when p &gt; {checks.cutoff:.4f}"
+            "&rdquo;." if decision else "")
+    notes = "".join(f"<p>{_text(n)}</p>" for n in checks.notes)
+    return (
+        '<section id="by-group"><h2>By group</h2>'
+        "<p>The checks above, group by group: smooth calibration error (Błasiok &amp; Nakkiran "
+        "2023), calibration slope and intercept (Cox 1958), scores with bootstrap intervals "
+        f"(rows resampled within the group).{rule} Groups below {checks.min_rows:g} effective "
+        f"rows or {checks.min_events:g} effective rows of either class (common practice) are "
+        "listed but not judged and left out of the gaps. Equal calibration and equal error "
+        "rates across groups are different notions of fairness; when base rates differ they "
+        "cannot both hold.</p>"
+        f'<table id="group-checks"><thead><tr>{head}</tr></thead>'
+        f"<tbody>{''.join(rows)}</tbody></table>"
+        + (f'<h3>Largest gaps between judged groups first</h3><ul id="group-gaps">{gaps}</ul>'
+           if gaps else "<p>Fewer than two judged groups: no gaps to compare.</p>")
+        + notes + "</section>"
+    )
