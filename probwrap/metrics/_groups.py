@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numbers
 import warnings
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -128,6 +129,10 @@ class GroupChecks:
         The same checks on all rows together (its ``group`` is ``"all"``).
     cutoff : float or None
     min_rows, min_events : float
+    notes : list of str
+        Groups too small to judge, then every warning met while computing a group's numbers
+        and every number that could not be computed, with the group named (shown in the
+        report's "By group" section).
     """
 
     groups: list[GroupCheck]
@@ -156,30 +161,47 @@ def _kish(w: np.ndarray) -> float:
     return float(w.sum() ** 2 / s2) if s2 > 0 else 0.0
 
 
-def _safe(fn, *args, **kwargs) -> float:
+@contextmanager
+def _noted(notes: list[str], label: Any):
+    """Warnings raised while checking one group go to the result's ``notes`` (once each, with
+    the group named) instead of the caller's console, where one line per group and metric would
+    bury them; warnings that are not ``UserWarning`` pass through unchanged."""
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        yield
+    for item in caught:
+        if issubclass(item.category, UserWarning):
+            msg = f"group {plain(label)!r}: {item.message}"
+            if msg not in notes:
+                notes.append(msg)
+        else:
+            warnings.warn_explicit(item.message, item.category, item.filename, item.lineno)
+
+
+def _safe(notes, label, fn, *args, **kwargs) -> float:
     try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", UserWarning)
+        with _noted(notes, label):
             return float(fn(*args, **kwargs))
-    except ValueError:
+    except ValueError as exc:  # e.g. one class only: the value is NaN, and the note says why
+        notes.append(f"group {plain(label)!r}: {fn.__name__} not computed ({exc})")
         return float("nan")
 
 
-def _interval(metric, y, p, w, n_resamples, level, seed) -> tuple[float, float]:
+def _interval(notes, label, metric, y, p, w, n_resamples, level, seed) -> tuple[float, float]:
     if n_resamples == 0 or np.count_nonzero(w) < 2:
         return (float("nan"), float("nan"))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UserWarning)
-        try:
+    try:
+        with _noted(notes, label):
             res = bootstrap_interval(metric, y, p, sample_weight=w, n_resamples=n_resamples,
                                      confidence_level=level, random_state=seed)
-        except ValueError:
-            return (float("nan"), float("nan"))
+    except ValueError as exc:
+        notes.append(f"group {plain(label)!r}: no interval for {metric.__name__} ({exc})")
+        return (float("nan"), float("nan"))
     return (float(res.confidence_interval.low), float(res.confidence_interval.high))
 
 
 def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples, level,
-               seed) -> GroupCheck:
+               seed, notes) -> GroupCheck:
     pos = w * y
     neg = w * (1.0 - y)
     eff_rows, eff_pos, eff_neg = _kish(w), _kish(pos), _kish(neg)
@@ -189,11 +211,11 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
 
     def slope_parts():
         try:
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", UserWarning)
+            with _noted(notes, label):
                 r = calibration_slope_intercept(y, p, sample_weight=w, labels=[0.0, 1.0])
             return r.slope, r.intercept
-        except ValueError:
+        except ValueError as exc:
+            notes.append(f"group {plain(label)!r}: no calibration slope ({exc})")
             return float("nan"), float("nan")
 
     slope, intercept = slope_parts() if both else (float("nan"), float("nan"))
@@ -217,14 +239,14 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
         judged=bool(judged),
         observed_rate=float(pos.sum() / total),
         mean_forecast=float(np.dot(w, p) / total),
-        calibration_error=_safe(smooth_calibration_error, y, p, sample_weight=w,
+        calibration_error=_safe(notes, label, smooth_calibration_error, y, p, sample_weight=w,
                                 labels=[0.0, 1.0]),
         calibration_slope=slope,
         calibration_intercept=intercept,
-        brier=_safe(brier_score, y, p, sample_weight=w, labels=[0.0, 1.0]),
-        brier_interval=_interval(brier_score, y, p, w, n_resamples, level, seed),
-        log_loss=_safe(log_loss, y, p, sample_weight=w, labels=[0.0, 1.0]),
-        log_loss_interval=_interval(log_loss, y, p, w, n_resamples, level, seed),
+        brier=_safe(notes, label, brier_score, y, p, sample_weight=w, labels=[0.0, 1.0]),
+        brier_interval=_interval(notes, label, brier_score, y, p, w, n_resamples, level, seed),
+        log_loss=_safe(notes, label, log_loss, y, p, sample_weight=w, labels=[0.0, 1.0]),
+        log_loss_interval=_interval(notes, label, log_loss, y, p, w, n_resamples, level, seed),
         **decision,
     )
 
@@ -342,11 +364,12 @@ def calibration_by_group(
     args = (cutoff, matrix, float(min_rows), float(min_events), int(n_resamples),
             float(confidence_level), random_state)
     checks = []
+    computed: list[str] = []  # warnings met while computing, by group
     for k, key in enumerate(keys):
         rows = inverse == k
         label = key.item() if hasattr(key, "item") else key
-        checks.append(_check_one(label, y[rows], p[rows], w[rows], *args))
-    overall = _check_one("all", y, p, w, *args)
+        checks.append(_check_one(label, y[rows], p[rows], w[rows], *args, computed))
+    overall = _check_one("all", y, p, w, *args, computed)
     judged = sorted((c for c in checks if c.judged), key=lambda c: -np.nan_to_num(
         c.calibration_error, nan=-1.0))
     small = sorted((c for c in checks if not c.judged), key=lambda c: -c.weight)
@@ -357,6 +380,7 @@ def calibration_by_group(
             f"{len(small)} group(s) below {min_rows:g} effective rows or {min_events:g} of a class "
             "are listed but not judged: " + ", ".join(str(c.group) for c in small) + "."
         )
+    notes.extend(computed)
     return GroupChecks(groups=judged + small, gaps=gaps, overall=overall, cutoff=cutoff,
                        min_rows=float(min_rows), min_events=float(min_events), notes=notes)
 
