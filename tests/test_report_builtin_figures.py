@@ -91,7 +91,8 @@ def figures(content):
 
 # -- numbers ----------------------------------------------------------------------------------
 def test_keys_match_the_report(content, figures):
-    assert sorted(figures) == ["cost", "decision_curve", "prevalence", "reliability"]
+    assert sorted(figures) == ["alarm", "cost", "decision_curve", "prevalence",
+                               "reliability"]
     no_costs = collect_content(y_true=content.y_true, y_prob=content.y_prob, n_resamples=5)
     assert sorted(builtin_figures(no_costs)) == ["decision_curve", "reliability"]
 
@@ -199,6 +200,20 @@ def test_decision_curve_values(content, figures):
     np.testing.assert_allclose(mx, content.chosen_cutoff, atol=TOL)
 
 
+def test_alarm_chart_draws_the_cusum(content, figures):
+    # consistency: the drawn sums map back to the CUSUM of the report's batch table
+    res = content.alarm.result
+    _, panels = _panels(figures["alarm"])
+    panel = panels[0]
+    x, up, _ = _polyline_data(panel, "upper")
+    np.testing.assert_allclose(x, np.arange(res.upper.shape[0]), atol=TOL)
+    np.testing.assert_allclose(up, res.upper, atol=TOL, rtol=0)
+    _, down, _ = _polyline_data(panel, "lower")
+    np.testing.assert_allclose(down, res.lower, atol=TOL, rtol=0)
+    _, hy, _ = _polyline_data(panel, "interval")
+    np.testing.assert_allclose(hy, res.decision_interval, atol=TOL)
+
+
 def test_prevalence_per_batch(content, figures):
     tab = content.batch_table
     _, panels = _panels(figures["prevalence"])
@@ -303,7 +318,7 @@ def test_works_with_matplotlib_blocked(monkeypatch, content):
         import matplotlib  # noqa: F401
     fresh = importlib.import_module("probwrap.report._builtin_figures")
     figs = fresh.builtin_figures(content)
-    assert sorted(figs) == ["cost", "decision_curve", "prevalence", "reliability"]
+    assert sorted(figs) == ["alarm", "cost", "decision_curve", "prevalence", "reliability"]
     for svg in figs.values():
         ET.fromstring(svg)
     # the whole page through the public entry point, figures from the built-in renderer
@@ -333,7 +348,7 @@ def test_build_report_with_builtin_figures(monkeypatch, content):
 
 
 def test_page_renders_without_console_errors_and_every_figure_visible(page, tmp_path, chromium):
-    assert "<script" not in page and page.count('class="pw-svg-chart"') == 4
+    assert "<script" not in page and page.count('class="pw-svg-chart"') == 5
     path = tmp_path / "report.html"
     path.write_text(page, encoding="utf-8")
     proc = chromium.run(["--enable-logging=stderr", "--v=0", f"--screenshot={tmp_path / 's.png'}",
@@ -349,7 +364,7 @@ def test_page_renders_without_console_errors_and_every_figure_visible(page, tmp_
     assert match, proc.stdout[-1000:]
     entries = match.group(1).split(";")
     assert [e.split(":")[0] for e in entries] == [
-        "fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence"]
+        "fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence", "fig-alarm"]
     for entry in entries:
         _, size, visibility, display = entry.split(":")
         w, h = (int(v) for v in size.split("x"))

@@ -58,7 +58,8 @@ def test_every_figure_is_laid_out(report_path, tmp_path, chromium):
     assert match, proc.stdout[-1000:]
     entries = match.group(1).split(";")
     ids = [e.split(":")[0] for e in entries]
-    assert ids == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence"]
+    assert ids == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence",
+                   "fig-alarm"]
     for entry in entries:
         fid, size, visibility, display = entry.split(":")
         w, h = (int(v) for v in size.split("x"))

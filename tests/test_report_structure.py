@@ -40,7 +40,7 @@ class _Page(html.parser.HTMLParser):
         if self._fig and tag == "svg":
             self._fig["svg"] += 1
             self._fig["width"] = a.get("width")
-        if self._fig and tag in ("path", "use"):
+        if self._fig and tag in ("path", "use", "polyline", "line", "circle"):  # drawn marks
             self._fig["paths"] += 1
         if tag == "tr":
             key = a.get("data-metric") or a.get("data-rule") or a.get("data-item")
@@ -100,7 +100,8 @@ def test_sections_and_figures(report):
     _, page, text, _ = report
     assert page.sections == ["calibration", "decisions", "prevalence", "cautions"]
     ids = [f["id"] for f in page.figures]
-    assert ids == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence"]
+    assert ids == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence",
+                   "fig-alarm"]
     for fig in page.figures:
         assert fig["svg"] == 1 and fig["paths"] > 20, fig
     for caution in CAUTIONS:
@@ -239,7 +240,7 @@ def test_report_from_fitted_wrappers(tmp_path):
     page = _Page()
     page.feed(path.read_text(encoding="utf-8"))
     assert _val(page.rows["chosen"][0]) == policy.cutoff_
-    assert len(page.figures) == 4
+    assert len(page.figures) == 5  # with the prevalence alarm of the batches
 
 
 @pytest.mark.parametrize(

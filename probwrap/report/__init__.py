@@ -126,7 +126,10 @@ def write_report(
     prior_shift : fitted and adapted :class:`~probwrap.PriorShiftWrapper`, optional
         Supplies the source and estimated target prevalence, interval and shift test instead.
     batch_size : int, optional
-        Also estimate the prevalence per batch of this many unlabelled rows and draw it.
+        Also estimate the prevalence per batch of this many unlabelled rows and draw it, with
+        a prevalence alarm: a two-sided CUSUM of the batch estimates against the source
+        prevalence (:func:`probwrap.shift.cusum_alarms`, k = 0.5, h = 5; see
+        docs/prevalence_alarms.md).
     n_bins : int, default=10
         Bins of the reliability diagram and the calibration error.
     n_resamples : int, default=200

@@ -20,6 +20,7 @@ from ..metrics import (
 )
 from ..plot._intervals import bin_counts, wilson_interval
 from ..plot._style import PALETTE
+from ._alarm_chart import alarm_svg
 from ._svg_axes import nice_ticks
 from ._svg_charts import Chart
 
@@ -254,7 +255,7 @@ def builtin_figures(content: Any) -> dict[str, str]:
 
     Same keys and meaning as :func:`probwrap.report._html.make_figures` for the binary report:
     ``"reliability"`` always, ``"cost"`` when costs were given, ``"decision_curve"`` always,
-    ``"prevalence"`` when a per-batch table was computed. For the general (multiclass or
+    ``"prevalence"`` when a per-batch table was computed, ``"alarm"`` when its CUSUM was. For the general (multiclass or
     multi-action) report, ``content.kind == "general"``, only ``"reliability"`` is returned, in
     its top-label form; the action-share and class-share figures of that report are not drawn
     by the built-in renderer.
@@ -299,4 +300,6 @@ def builtin_figures(content: Any) -> dict[str, str]:
     if c.batch_table is not None:
         figs["prevalence"] = prevalence_svg(c.batch_table, source_prevalence=c.source_prevalence,
                                             key="prev")
+    if getattr(c, "alarm", None) is not None:
+        figs["alarm"] = alarm_svg(c.alarm, key="alarm")
     return figs

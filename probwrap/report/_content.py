@@ -96,6 +96,7 @@ class ReportContent:
     recommendation: Recommendation | None = None
     class_names: tuple[str, str] = ("negative", "positive")
     group_checks: Any = None
+    alarm: Any = None
 
 
 def _inner_chain(model: Any) -> list[Any]:
@@ -377,6 +378,13 @@ def collect_content(
             content.batch_table = notes.compute(
                 "batches", "prevalence by batch", prior_by_batch, est,
                 np.column_stack([1.0 - q, q]), batch_size=batch_size)
+    if content.batch_table is not None and content.source_prevalence is not None:
+        from ._alarm_chart import batch_alarm
+
+        content.alarm = notes.compute(
+            "batches", "prevalence alarm", batch_alarm, content.batch_table,
+            content.source_prevalence, confidence_level=confidence_level,
+            expected=(ValueError,))
     E = None
     if content.target_prevalence is not None and content.chosen_cutoff is not None:
         src = content.source_prevalence

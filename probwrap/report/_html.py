@@ -11,6 +11,7 @@ from ..plot import (
     PrevalenceDriftDisplay,
     ReliabilityDiagram,
 )
+from ._alarm_chart import alarm_svg
 from ._content import BAYES_NAME, HALF_NAME, ReportContent
 from ._general_html import general_figures, general_glance, general_sections
 from ._groups_html import group_section
@@ -289,8 +290,45 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
                 "Estimated prevalence per batch of unlabelled rows with bootstrap intervals, "
                 "against the source prevalence; circled batches fail the shift test.",
             ))
+        if getattr(c, "alarm", None) is not None:
+            parts.append(_alarm_text(c))
+            if "alarm" in figures:
+                parts.append(_figure(
+                    "fig-alarm", figures["alarm"],
+                    "Two-sided CUSUM of the batch prevalence estimates, in standard errors "
+                    f"against the source prevalence (k = {c.alarm.result.reference:g}); an "
+                    "alarm fires when a sum crosses the dashed decision interval "
+                    f"h = {c.alarm.result.decision_interval:g} and both sums restart.",
+                ))
     parts.append("</section>")
     return "".join(parts)
+
+
+def _alarm_text(c: Any) -> str:
+    a = c.alarm
+    res = a.result
+    if a.first_batch is None:
+        verdict = "<b>No alarm</b>: the prevalence estimates have not drifted beyond the chart's "
+        verdict += "decision interval."
+    else:
+        way = "rose" if res.direction[0] > 0 else "fell"
+        verdict = (f"<b>Alarm after batch {_text(a.first_batch)}</b>: the prevalence {way} "
+                   "beyond the chart's decision interval")
+        if res.alarms.size > 1:
+            verdict += (f" ({res.alarms.size} alarms in all, after batches "
+                        + ", ".join(_text(a.batches[i]) for i in res.alarms) + ")")
+        verdict += "."
+    return (
+        f'<p class="pw-alarm" data-first-alarm="{_text(a.first_batch or "")}" '
+        f'data-n-alarms="{res.alarms.size}">'
+        f"Prevalence alarm (two-sided CUSUM, Page 1954; reference value k = "
+        f"{res.reference:g} and decision interval h = {res.decision_interval:g} standard "
+        "errors, the standard error of each batch read from its interval): "
+        f"{verdict} When nothing has moved the chart sounds falsely about once every "
+        f'<span data-value="{a.in_control_run_length!r}">{a.in_control_run_length:.0f}</span> '
+        "batches (in-control average run length, Brook &amp; Evans 1972). An alarm says the "
+        "estimates drifted, not why; check a labelled sample before acting.</p>"
+    )
 
 
 def _cautions_section() -> str:
@@ -366,6 +404,9 @@ def make_figures(c: Any) -> dict[str, str]:
             c.batch_table, source_prevalence=c.source_prevalence
         )
         figs["prevalence"] = figure_to_svg(pd_.figure_, "prev")
+    if getattr(c, "alarm", None) is not None:
+        # the CUSUM chart is drawn by the built-in renderer in both cases (no display object)
+        figs["alarm"] = alarm_svg(c.alarm, key="alarm")
     return figs
 
 
