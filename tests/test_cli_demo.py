@@ -56,7 +56,8 @@ def test_demo_subprocess_writes_report(tmp_path):
     assert "chosen cutoff" in proc.stdout and "winter prevalence (est.)" in proc.stdout
     page = _parse(out / "report.html")
     assert page.sections == ["calibration", "decisions", "prevalence", "cautions"]
-    assert page.figures == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence"]
+    assert page.figures == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence",
+                            "fig-alarm"]
 
 
 def test_demo_in_process_summary(tmp_path, capsys):
@@ -107,7 +108,8 @@ def test_report_verb_good_files(score_files, tmp_path, capsys, name):
                         {"fp": 3.0, "fn": 40.0}, capacity=0.3, score_bounds=(0, 1))
     assert f"cutoff {ref.cutoff:.4f}" in msg
     page = _parse(out)
-    assert page.figures == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence"]
+    assert page.figures == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence",
+                            "fig-alarm"]
 
 
 def _write(tmp_path, name, text):
