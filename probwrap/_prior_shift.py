@@ -13,8 +13,8 @@ from ._cost_policy import SMALL_HELDOUT_ROWS, SUMMARY_BINS
 from ._heldout import HeldOutClassifierBase, _is_dask, _multiclass_dask, check_fitted
 from ._validation import plain
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
-from .shift._estimate import evidence_cutoff
 from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
+from .shift._shift_tests import evidence_cutoff
 
 __all__ = ["PriorShiftWrapper"]
 
@@ -105,7 +105,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``adapt`` accepts: the cutoff ``c`` is the smallest value >= ``min_evidence`` at which
         the expected harm of the rule under no shift — computed from the unlabelled rows
         themselves (how much the predictions change per unit of prior, against how well the
-        rows pin the prior down, see :func:`probwrap.shift._estimate.null_harm_scale`) — is at
+        rows pin the prior down, see :func:`probwrap.shift._shift_tests.null_harm_scale`) — is at
         most ``max_harm`` (a limited-risk empirical-Bayes rule in the spirit of Efron & Morris
         1972). Strongly separating models or common classes keep ``c`` near 1; a weak model
         at a small prevalence, whose rows say little about the prior while every prediction

@@ -13,22 +13,16 @@ from sklearn.utils import check_random_state
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ..calibration._logodds import proba_to_log_proba
 from ._calibration import BiasCorrectedScaling, _log_softmax
-from ._estimate import (
-    BoundaryPriorWarning,
-    PriorEstimate,
+from ._confusion import _simplex_least_squares, acc_prior, bbse_prior, heldout_confusion
+from ._estimate import BoundaryPriorWarning, PriorEstimate, _solve_prior, _warn_empty_columns
+from ._interval import bca_interval, score_interval
+from ._shift_tests import (
     _mean_cov,
     _score_rows,
     _score_stat_moments,
-    _simplex_least_squares,
-    _solve_prior,
     _source_moments,
-    _warn_empty_columns,
-    acc_prior,
-    bbse_prior,
-    heldout_confusion,
     null_harm_scale,
 )
-from ._interval import bca_interval, score_interval
 
 __all__ = ["PriorEstimator", "PRIOR_METHODS", "CALIBRATIONS", "INTERVALS", "prior_by_batch"]
 
@@ -712,7 +706,7 @@ def _widen(
     unpenalised estimate on ``n_eff`` rows. This matters where the bootstrap degenerates: an
     estimate on the edge of the simplex (every resample at 0) would otherwise give [0, 0].
     """
-    from ._estimate import binomial_interval
+    from ._confusion import binomial_interval
 
     out = bounds.copy()
     cp = binomial_interval(np.clip(centre, 0.0, 1.0), max(n_eff, 1e-9), level)
