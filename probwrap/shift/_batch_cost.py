@@ -119,10 +119,10 @@ def expected_cost_by_batch(
     The batch's expected cost per row is :math:`\bar m = \sum_i w_i m_i / W` and, the outcomes
     being independent given the probabilities, the realised cost per row has variance
     :math:`\sum_i w_i v_i / W^2` (:math:`W = \sum_i w_i`; for one cost per class and action this is
-    the Poisson–binomial variance, Wang 1993, eq. 1.2). The interval is the normal one,
+    the Poisson–binomial variance, Wang 1993; equation number not given, citation from memory). The interval is the normal one,
     :math:`\bar m \pm z_{(1+\text{level})/2}\, \mathrm{se}`, justified by the Lyapunov central
     limit theorem for independent bounded, non-identical summands (Billingsley, *Probability and
-    Measure*, Theorem 27.3). It is a **prediction interval for the realised cost** of the batch,
+    Measure*, Theorem 27.3; theorem number from memory). It is a **prediction interval for the realised cost** of the batch,
     not a confidence interval for a population mean.
 
     **What the interval covers.** The randomness of the outcomes given the probabilities. It
