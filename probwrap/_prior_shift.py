@@ -9,11 +9,12 @@ from typing import Any
 
 import numpy as np
 
+from ._cost_policy import SMALL_HELDOUT_ROWS, SUMMARY_BINS
 from ._heldout import HeldOutClassifierBase, _is_dask, _multiclass_dask, check_fitted
 from ._validation import plain
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
-from .shift._estimate import evidence_cutoff
 from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
+from .shift._shift_tests import evidence_cutoff
 
 __all__ = ["PriorShiftWrapper"]
 
@@ -104,7 +105,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``adapt`` accepts: the cutoff ``c`` is the smallest value >= ``min_evidence`` at which
         the expected harm of the rule under no shift — computed from the unlabelled rows
         themselves (how much the predictions change per unit of prior, against how well the
-        rows pin the prior down, see :func:`probwrap.shift._estimate.null_harm_scale`) — is at
+        rows pin the prior down, see :func:`probwrap.shift._shift_tests.null_harm_scale`) — is at
         most ``max_harm`` (a limited-risk empirical-Bayes rule in the spirit of Efron & Morris
         1972). Strongly separating models or common classes keep ``c`` near 1; a weak model
         at a small prevalence, whose rows say little about the prior while every prediction
@@ -120,8 +121,20 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     random_state : int, RandomState or None, default=None
         Seeds the folds and the bootstrap.
     tally_resolution : float, default=1e-3
-        Dask input only: bin width on the log-odds scale of the score tallies that the
-        predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
+        Bin width on the log-odds scale of the score tallies that the predictions are reduced
+        to: for Dask input always (see :mod:`probwrap.scale`); for in-memory input only to
+        summarise more than 20,000 labelled rows for the intervals (see ``keep_heldout``).
+    keep_heldout : bool, default=False
+        Keep every held-out prediction in the fitted wrapper. By default a binary fit keeps
+        them only up to 20,000 held-out rows; beyond that the fitted wrapper stays small
+        (well under 1 MB pickled, whatever the number of rows): the calibration, source prior,
+        confusion matrices and the labelled side of the shift test are computed on every row at
+        fit time (so predictions, ``target_prior_`` and ``shift_statistic_`` are the same),
+        and the intervals (``target_prior_interval_``, ``monitor``) read a tally of the
+        held-out probabilities instead of the rows (per class, bins of ``tally_resolution`` on
+        the log-odds scale, at most 8,192 of them, with a Poisson bootstrap of the bin counts:
+        exact up to the binning for unit weights). ``True`` keeps the rows at any size.
+        Multiclass fits always keep the rows.
 
     Attributes
     ----------
@@ -204,6 +217,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         n_jobs: int | None = None,
         random_state: Any = None,
         tally_resolution: float = 1e-3,
+        keep_heldout: bool = False,
     ) -> None:
         self.estimator = estimator
         self.target_prior = target_prior
@@ -221,9 +235,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.n_jobs = n_jobs
         self.random_state = random_state
         self.tally_resolution = tally_resolution
+        self.keep_heldout = keep_heldout
 
     # -- parameters ------------------------------------------------------------------------------
     def _check_params(self) -> None:
+        if not isinstance(self.keep_heldout, (bool, np.bool_)):
+            raise ValueError(f"`keep_heldout` must be True or False; got {plain(self.keep_heldout)!r}.")
         if self.method not in PRIOR_METHODS:
             raise ValueError(f"`method` must be one of {PRIOR_METHODS}; got {plain(self.method)!r}.")
         if self.calibration not in CALIBRATIONS:
@@ -311,6 +328,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         rows = _tally_rows(self.tally_) if ho.from_tally else None
         est.fit(ho.values, ho.y_index, ho.sample_weight, effective_rows=rows)
         self._source_tally = self.tally_ if ho.from_tally else None
+        if (not ho.from_tally and not self.keep_heldout
+                and np.count_nonzero(ho.sample_weight) > SMALL_HELDOUT_ROWS):
+            # many rows: keep a tally of them for the intervals, not the rows (keep_heldout)
+            from .scale._entry import check_resolution
+
+            est._condense_source(check_resolution(self.tally_resolution), SUMMARY_BINS)
         return self._finish_fit(est)
 
     def _finish_fit(self, est: PriorEstimator) -> PriorShiftWrapper:

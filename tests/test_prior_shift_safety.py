@@ -135,7 +135,7 @@ def test_null_harm_is_scipy_chi_square_expectation():
     # chi-square mean (cutoff 0 leaves the estimate untouched: E[T] = df).
     from scipy.stats import chi2
 
-    from probwrap.shift._estimate import null_harm
+    from probwrap.shift._shift_tests import null_harm
 
     for df in (1, 2, 4):
         assert null_harm(0.0, df) == df
@@ -152,7 +152,7 @@ def test_harm_scale_is_the_log_loss_curvature_over_the_estimate_variance():
     # Consistency test of the second-order formula: the excess log loss (expected under the
     # calibrated posteriors themselves) of re-weighting by a small change d of the prior is
     # 1/2 K d^2, with K = E[p(1-p)] / (pi0 pi1)^2 for two classes.
-    from probwrap.shift._estimate import null_harm_scale
+    from probwrap.shift._shift_tests import null_harm_scale
 
     rng = np.random.default_rng(8)
     p, _ = binary_gaussian(4000, 0.1, rng, sep=1.0)
@@ -174,7 +174,7 @@ def test_cutoff_rises_only_where_no_shift_would_be_harmed(weak_model):
     # A weak model at a small prevalence: its rows say little about the prior while every
     # prediction reacts to it, so the cutoff rises above min_evidence; a strong model at
     # 30 % keeps it at the floor. The expected harm at the chosen cutoff is max_harm.
-    from probwrap.shift._estimate import null_harm
+    from probwrap.shift._shift_tests import null_harm
 
     rng = np.random.default_rng(5)
     X, y = gaussian(2000, 0.02, rng, delta=0.74)

@@ -89,9 +89,20 @@ def tally_cutoff_interval(
     )
 
 
-def _row_replicates(w: np.ndarray, n_replicates: int, seed: Any):
-    """Poisson(1) replicate weights of in-memory rows, one replicate per call (memory O(n))."""
+def _row_replicates(w: np.ndarray, n_replicates: int, seed: Any, rows: Any = None):
+    """Poisson(1) replicate weights of in-memory rows, one replicate per call (memory O(n)).
+
+    ``rows``: the number of rows behind each entry when the entries are bins (a bin of ``c``
+    rows holds Poisson(``c``) rows of a replicate); None for one row each.
+    """
     rng = np.random.default_rng(seed)
+    if rows is not None:
+        unit = w / rows
+
+        def draw_bins(b: int) -> np.ndarray:
+            return unit * rng.poisson(rows)
+
+        return draw_bins
 
     def draw(b: int) -> np.ndarray:
         return w * rng.poisson(1.0, size=w.shape[0])
@@ -136,7 +147,7 @@ def tally_prior_interval(
         src_reps = source.replicate_row_weights()
         src_draw = src_reps.__getitem__
     else:
-        src_draw = _row_replicates(sw_rows, B, [seed, 2])
+        src_draw = _row_replicates(sw_rows, B, [seed, 2], estimator._source_row_counts())
     if target is not None:
         B = min(B, target.n_replicates)
         tgt_draw = target.replicate_bin_weights().__getitem__

@@ -201,7 +201,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     est.soft_confusion_ = soft / total
     est._src = None
     est.n_source_effective_ = total**2 / squared_weight
-    # stratified mean and covariance of the mean, as probwrap.shift._estimate._source_moments
+    # stratified mean and covariance of the mean, as probwrap.shift._shift_tests._source_moments
     prior = class_weight / total
     mean = np.zeros(k - 1)
     cov = np.zeros((k - 1, k - 1))
@@ -305,7 +305,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             prior = point.prior
     finally:
         parts.clear()
-    from ..shift._estimate import _score_stat_moments
+    from ..shift._shift_tests import _score_stat_moments
 
     mean = su / total
     stat, pvalue = _score_stat_moments(

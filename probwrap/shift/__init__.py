@@ -6,23 +6,19 @@ about scikit-learn estimators. :class:`probwrap.PriorShiftWrapper` is the estima
 
 from ._adjust import adjust_to_prior, check_prior, project_to_simplex, shift_cutoff
 from ._alarms import CusumResult, cusum_alarms, cusum_run_length
+from ._batch_cost import expected_cost_by_batch
 from ._calibration import BiasCorrectedScaling
+from ._confusion import acc_prior, bbse_prior, binomial_interval, heldout_confusion
 from ._estimate import (
     BoundaryPriorWarning,
     PriorEstimate,
     PriorNotIdentifiedWarning,
-    ShiftTestResult,
-    acc_prior,
-    bbse_prior,
-    binomial_interval,
     em_prior,
-    heldout_confusion,
     prior_log_likelihood,
-    shift_score_test,
-    shift_test,
 )
 from ._estimator import CALIBRATIONS, INTERVALS, PRIOR_METHODS, PriorEstimator, prior_by_batch
 from ._interval import bca_interval, jackknife_acceleration, score_interval
+from ._shift_tests import ShiftTestResult, shift_score_test, shift_test
 
 __all__ = [
     "BiasCorrectedScaling",
@@ -47,6 +43,7 @@ __all__ = [
     "binomial_interval",
     "check_prior",
     "em_prior",
+    "expected_cost_by_batch",
     "heldout_confusion",
     "prior_by_batch",
     "prior_log_likelihood",

@@ -13,22 +13,16 @@ from sklearn.utils import check_random_state
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ..calibration._logodds import proba_to_log_proba
 from ._calibration import BiasCorrectedScaling, _log_softmax
-from ._estimate import (
-    BoundaryPriorWarning,
-    PriorEstimate,
+from ._confusion import _simplex_least_squares, acc_prior, bbse_prior, heldout_confusion
+from ._estimate import BoundaryPriorWarning, PriorEstimate, _solve_prior, _warn_empty_columns
+from ._interval import bca_interval, score_interval
+from ._shift_tests import (
     _mean_cov,
     _score_rows,
     _score_stat_moments,
-    _simplex_least_squares,
-    _solve_prior,
     _source_moments,
-    _warn_empty_columns,
-    acc_prior,
-    bbse_prior,
-    heldout_confusion,
     null_harm_scale,
 )
-from ._interval import bca_interval, score_interval
 
 __all__ = ["PriorEstimator", "PRIOR_METHODS", "CALIBRATIONS", "INTERVALS", "prior_by_batch"]
 
@@ -204,6 +198,7 @@ class PriorEstimator:
                 "estimate its prior."
             )
         self._src = (p.copy(), np.asarray(y_idx, dtype=int), w)
+        self._src_rows = None  # rows behind each entry of _src (None: one row each)
         self._boot = None
         self.n_classes_ = k
         self.n_source_effective_ = float(effective_rows) if effective_rows else _kish(w)
@@ -249,6 +244,61 @@ class PriorEstimator:
 
     def _source_rows(self) -> tuple | None:
         return getattr(self, "_src", None)
+
+    def _source_row_counts(self) -> np.ndarray | None:
+        """Rows behind each labelled entry (Kish's count of a bin; None: one row each)."""
+        return getattr(self, "_src_rows", None)
+
+    def __getstate__(self) -> dict:
+        # the per-row bootstrap pieces are a cache, recomputed on demand: never pickled
+        state = self.__dict__.copy()
+        state["_boot"] = None
+        return state
+
+    def _condense_source(self, resolution: float, max_bins: int) -> None:
+        """Replace the kept labelled rows of a binary fit by a tally of their log-odds.
+
+        Everything :meth:`fit` derives from the rows (calibration, source prior, confusion
+        matrices, the score moments of the shift test) stays as computed on every row; only the
+        intervals, which re-read the labelled rows, then read bins instead: per class, the rows
+        whose raw log-odds fall in one bin of width ``resolution`` (doubled until at most
+        ``max_bins`` bins span the scores) become one entry with the bin's weighted mean
+        probability, the bin's total weight and Kish's count of its rows (for the Poisson
+        bootstrap: a bin of ``c`` unit-weight rows drawn Poisson(1) times each holds
+        Poisson(``c``) rows of a resample). Exact up to the binning for unit weights.
+        """
+        src = self._source_rows()
+        if src is None or self.n_classes_ != 2 or self._source_row_counts() is not None:
+            return
+        p, y, w = src
+        keep = w > 0
+        p, y, w = p[keep], y[keep], w[keep]
+        with np.errstate(divide="ignore"):
+            s = np.log(p[:, 1]) - np.log(p[:, 0])
+        finite = np.isfinite(s)
+        res = float(resolution)
+        if finite.any():
+            lo, hi = float(s[finite].min()), float(s[finite].max())
+            while (hi - lo) / res + 1.0 > max_bins:
+                res *= 2.0
+            b = np.floor((np.where(finite, s, lo) - lo) / res).astype(np.int64) + 1
+        else:
+            b = np.zeros(s.shape[0], dtype=np.int64)
+        b = np.where(finite, b, np.where(s > 0, max_bins + 2, 0))  # scores 0 and 1 apart
+        key = b * 2 + y
+        uniq, inverse = np.unique(key, return_inverse=True)
+        inverse = inverse.ravel()
+        m = uniq.shape[0]
+        total = np.bincount(inverse, weights=w, minlength=m)
+        square = np.bincount(inverse, weights=w * w, minlength=m)
+        # the bin's weighted mean log-odds (scores of exactly 0 or 1 keep their own bins)
+        mean = np.bincount(inverse, weights=w * np.where(finite, s, 0.0), minlength=m) / total
+        edge = uniq // 2
+        mean = np.where(edge == 0, -np.inf, np.where(edge == max_bins + 2, np.inf, mean))
+        proba = np.column_stack([expit(-mean), expit(mean)])
+        self._src = (proba, (uniq % 2).astype(int), total)
+        self._src_rows = total * total / square
+        self._boot = None
 
     # -- the pieces the bootstrap re-uses ------------------------------------------------------
     def _bootstrap_parts(self) -> dict:
@@ -585,11 +635,18 @@ class PriorEstimator:
         ws = source[2] if resample_source else None
         # all resample weights drawn up front, labelled then unlabelled, so a seed fixes both
         gen = np.random.default_rng(rng.randint(2**31 - 1))
-        src_counts = gen.poisson(1.0, size=(B, ws.shape[0])) if resample_source else None
+        rows = self._source_row_counts() if resample_source else None
+        if rows is None:
+            src_counts = gen.poisson(1.0, size=(B, ws.shape[0])) if resample_source else None
+            unit = ws
+        else:
+            # tallied labelled rows: a bin of c rows holds Poisson(c) rows of a resample
+            src_counts = gen.poisson(rows, size=(B, ws.shape[0]))
+            unit = ws / rows
         tgt_counts = gen.poisson(1.0, size=(B, n))
 
         def draw_source(b: int) -> np.ndarray | None:
-            return None if src_counts is None else src_counts[b] * ws
+            return None if src_counts is None else src_counts[b] * unit
 
         def draw_target(b: int) -> np.ndarray:
             return tgt_counts[b] * w
@@ -649,7 +706,7 @@ def _widen(
     unpenalised estimate on ``n_eff`` rows. This matters where the bootstrap degenerates: an
     estimate on the edge of the simplex (every resample at 0) would otherwise give [0, 0].
     """
-    from ._estimate import binomial_interval
+    from ._confusion import binomial_interval
 
     out = bounds.copy()
     cp = binomial_interval(np.clip(centre, 0.0, 1.0), max(n_eff, 1e-9), level)

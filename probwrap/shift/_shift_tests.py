@@ -1,0 +1,342 @@
+"""Tests of "no prior shift" and the evidence cutoff that decides how far to adapt."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from scipy.stats import chi2
+
+from .._validation import check_labels, check_same_length
+from ._adjust import check_prior
+from ._estimate import _check_target, _loglik, _solve_prior, kish_weights
+
+__all__ = [
+    "ShiftTestResult",
+    "shift_score_test",
+    "shift_test",
+    "evidence_cutoff",
+    "null_harm",
+    "null_harm_scale",
+]
+
+
+@dataclass(frozen=True)
+class ShiftTestResult:
+    """Result of :func:`shift_test`, in the style of SciPy's test results.
+
+    Attributes
+    ----------
+    statistic : float
+        ``2 * (loglik(prior) - loglik(source_prior))``, non-negative.
+    pvalue : float
+        Upper tail of the chi-square distribution with ``df`` degrees of freedom.
+    df : int
+        ``k - 1``.
+    prior : ndarray of shape (k,) or None
+        The maximum-likelihood prior used in the statistic (None for the score test, which
+        needs no estimate).
+    """
+
+    statistic: float
+    pvalue: float
+    df: int
+    prior: np.ndarray | None = None
+
+def shift_test(
+    proba: Any,
+    source_prior: Any,
+    *,
+    sample_weight: Any = None,
+    tol: float = 1e-8,
+    max_iter: int = 10000,
+) -> ShiftTestResult:
+    r"""Likelihood-ratio test that unlabelled rows have the source class priors.
+
+    The statistic is :math:`2\,[\ell(\hat\pi) - \ell(\pi^s)]` with :math:`\hat\pi` the
+    maximum-likelihood priors and :math:`\ell` the log-likelihood of
+    :func:`prior_log_likelihood`; under "no shift" it is asymptotically chi-square with
+    ``k - 1`` degrees of freedom (Saerens et al. 2002, section 2.3; Wilks 1938). The test
+    treats the posteriors as exact: it ignores the sampling error of the labelled rows they
+    were calibrated on (:func:`shift_score_test` with ``source_proba`` accounts for it).
+    Weights are rescaled to sum to Kish's effective sample size, so the statistic does not
+    depend on their scale (with unit weights it is the plain statistic).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift import shift_test
+    >>> rng = np.random.default_rng(1)
+    >>> p1 = rng.uniform(0.6, 0.99, size=200)      # every row leans to class 1
+    >>> res = shift_test(np.column_stack([1 - p1, p1]), [0.5, 0.5])
+    >>> bool(res.pvalue < 1e-6)
+    True
+    """
+    p, w = _check_target(proba, sample_weight)
+    k = p.shape[1]
+    src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
+    wk = kish_weights(w)
+    prior, _, _, _ = _solve_prior(p, wk, src, src.copy(), tol, max_iter)
+    stat = 2.0 * (_loglik(p, wk, src, prior) - _loglik(p, wk, src, src))
+    # the optimum is at least as likely as the source prior, so the statistic is >= 0 up to rounding
+    stat = max(stat, 0.0)
+    return ShiftTestResult(statistic=stat, pvalue=float(chi2.sf(stat, k - 1)), df=k - 1, prior=prior)
+
+
+def _score_rows(p: np.ndarray, src: np.ndarray) -> np.ndarray:
+    """Per-row score of the prior log-likelihood at the source prior, in a basis of the simplex.
+
+    ``d/dt log sum_k pi_k p_k / pi^s_k`` along ``e_j - e_0`` at ``pi = pi^s`` is
+    ``p_j / pi^s_j - p_0 / pi^s_0`` (the mixture there equals 1).
+    """
+    q = p / src
+    return q[:, 1:] - q[:, :1]
+
+
+def null_harm(cutoff: float, df: int) -> float:
+    r"""``E[(T - a)^2 / T; T > a]`` for ``T`` chi-square with ``df`` degrees of freedom, ``a = cutoff * df``.
+
+    When nothing moved, an estimate :math:`X` of the change of the priors has the statistic
+    :math:`T = X^\top \Sigma^{-1} X` (chi-square, ``df = k - 1``) and the rule
+    :math:`w = \max(0, 1 - a / T)` applies :math:`wX`; its squared error in the metric of
+    :math:`\Sigma` is :math:`w^2 T = (T - a)^2 / T` for :math:`T > a` and 0 otherwise. This
+    function is the expectation of that quantity, :math:`E[T; T>a] - 2a P(T>a) + a^2
+    E[1/T; T>a]`, in closed form from the chi-square density identities :math:`t f_d(t) = d
+    f_{d+2}(t)` and, for :math:`d \ge 3`, :math:`f_d(t)/t = f_{d-2}(t)/(d-2)`; for :math:`d = 2`
+    the last term is an exponential integral, for :math:`d = 1` it follows by one integration
+    by parts. ``cutoff = 0`` gives ``df``, the chi-square mean; it falls to 0 as ``cutoff``
+    grows.
+
+    Examples
+    --------
+    >>> from probwrap.shift._shift_tests import null_harm
+    >>> round(null_harm(0.0, 1), 6), round(null_harm(1.0, 1), 4)
+    (1.0, 0.3333)
+    """
+    from scipy.special import exp1
+    from scipy.stats import chi2 as chi2_dist
+
+    d = int(df)
+    a = float(cutoff) * d
+    if a <= 0:
+        return float(d)
+    upper = d * chi2_dist.sf(a, d + 2)
+    tail = chi2_dist.sf(a, d)
+    if d >= 3:
+        inverse = chi2_dist.sf(a, d - 2) / (d - 2)
+    elif d == 2:
+        inverse = 0.5 * exp1(a / 2.0)
+    else:  # int_a^inf t^(-3/2) e^(-t/2) dt = 2 a^(-1/2) e^(-a/2) - int_a^inf t^(-1/2) e^(-t/2) dt
+        inverse = 2.0 * np.exp(-a / 2.0) / np.sqrt(2.0 * np.pi * a) - tail
+    return float(max(upper - 2.0 * a * tail + a * a * inverse, 0.0))
+
+
+def null_harm_scale(
+    proba: np.ndarray, sample_weight: np.ndarray, source_prior: np.ndarray, mean_cov: np.ndarray
+) -> float:
+    r"""Relative harm, when nothing moved, of applying a change of the priors of size ``T``.
+
+    With calibrated posteriors ``proba`` of the unlabelled rows, the source prior
+    :math:`\pi^s` and the covariance ``mean_cov`` (:math:`V`) of the difference of the mean
+    score between unlabelled and labelled rows (the denominator of the shift test), a change
+    :math:`\Delta` of the priors (coordinates ``1..k-1``) applied when nothing moved costs, per
+    row and to second order, :math:`\tfrac12 \Delta^\top K \Delta` nats of log loss, with
+    :math:`K` the expected Fisher information of the re-weighted posteriors about the priors,
+    :math:`K = E[\sum_j p_j b_j b_j^\top] - J`, :math:`b_j = e_j/\pi^s_j - 1_{j=0}\,\mathbf 1/\pi^s_0`,
+    :math:`J = E[u u^\top]` (for two classes :math:`K = E[p(1-p)] / (\pi^s_0 \pi^s_1)^2`).
+    The one-step estimate of the change, :math:`X = J^{-1} \bar u`, has covariance
+    :math:`\Sigma = J^{-1} V J^{-1}` and statistic :math:`T = X^\top \Sigma^{-1} X`, so
+    :math:`\Delta^\top K \Delta \le \lambda\, T` for :math:`\Delta` along :math:`X`, with
+    :math:`\lambda` the largest eigenvalue of :math:`K\Sigma`. Divided by the expected log loss
+    of the posteriors themselves (their mean entropy), the expected relative harm of a rule
+    that applies the share :math:`w(T)` is at most ``scale * E[w(T)^2 T]``, where this
+    function returns ``scale`` :math:`= \lambda / (2 L_0)`.
+    """
+    p = np.asarray(proba, dtype=float)
+    w = np.asarray(sample_weight, dtype=float)
+    src = np.asarray(source_prior, dtype=float)
+    wn = w / w.sum()
+    u = _score_rows(p, src)
+    j = (u * wn[:, None]).T @ u
+    mp = wn @ p
+    k_mat = np.diag(mp[1:] / src[1:] ** 2) + mp[0] / src[0] ** 2 - j
+    j_inv = np.linalg.pinv(j)
+    sigma = j_inv @ np.atleast_2d(mean_cov) @ j_inv
+    lam = float(np.max(np.linalg.eigvals(k_mat @ sigma).real, initial=0.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ent = -np.where(p > 0, p * np.log(p), 0.0).sum(axis=1)
+    loss = float(wn @ ent)
+    if not (loss > 0 and np.isfinite(lam)):
+        return 0.0
+    return max(lam, 0.0) / (2.0 * loss)
+
+
+def evidence_cutoff(harm_scale: float | None, df: int, max_harm: float | None,
+                    floor: float) -> float:
+    r"""The cutoff ``c`` of the shrinkage rule ``w = max(0, 1 - c df / T)``.
+
+    ``floor`` (``min_evidence``) when ``max_harm`` is None or the expected relative harm
+    under no shift, ``harm_scale * null_harm(floor, df)``, is already at most ``max_harm``;
+    otherwise the smallest ``c > floor`` with ``harm_scale * null_harm(c, df) = max_harm``
+    (root by Brent's method; :func:`null_harm` falls monotonically in ``c``).
+
+    Examples
+    --------
+    >>> from probwrap.shift._shift_tests import evidence_cutoff, null_harm
+    >>> evidence_cutoff(0.01, 1, 0.01, 1.0)          # harmless enough at the floor
+    1.0
+    >>> c = evidence_cutoff(0.2, 1, 0.01, 1.0)
+    >>> round(0.2 * null_harm(c, 1), 6)
+    0.01
+    """
+    if max_harm is None or harm_scale is None or not np.isfinite(harm_scale) or harm_scale <= 0:
+        return float(floor)
+    if harm_scale * null_harm(floor, df) <= max_harm:
+        return float(floor)
+    from scipy.optimize import brentq
+
+    def excess(c: float) -> float:
+        return harm_scale * null_harm(c, df) - max_harm
+
+    hi = max(float(floor), 1.0)
+    while excess(hi) > 0 and hi < 1e4:
+        hi *= 2.0
+    if excess(hi) > 0:
+        return hi
+    return float(brentq(excess, float(floor), hi, xtol=1e-6))
+
+
+def _mean_cov(v: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray, float]:
+    wn = w / w.sum()
+    n_eff = float(w.sum() ** 2 / np.dot(w, w))
+    mean = wn @ v
+    c = v - mean
+    cov = (c * wn[:, None]).T @ c
+    return mean, cov, n_eff
+
+
+def shift_score_test(
+    proba: Any,
+    source_prior: Any,
+    *,
+    sample_weight: Any = None,
+    source_proba: Any = None,
+    source_sample_weight: Any = None,
+    source_y: Any = None,
+) -> ShiftTestResult:
+    r"""Score test that unlabelled rows have the source class priors; no estimate needed.
+
+    Each row's score of the prior log-likelihood at the source prior is
+    :math:`u_{nj} = p(j \mid x_n)/\pi^s_j - p(0 \mid x_n)/\pi^s_0` for
+    :math:`j = 1..k-1`. Under no shift its mean over the unlabelled rows is zero (Rao's score
+    test; Rao 1948). Given the labelled rows' posteriors ``source_proba``, the test compares
+    the mean score of the two samples instead — a two-sample comparison of means with separate
+    variances (Welch's form of the z-test; for two classes it equals statsmodels'
+    ``CompareMeans.ztest_ind(usevar="unequal")`` squared) — so the sampling error of the
+    labelled rows the posteriors were calibrated on is part of the test, not ignored. The
+    statistic :math:`\Delta^\top (\Sigma_t / (n_t - 1) + \Sigma_s / (n_s - 1))^{-1}
+    \Delta` is chi-square with ``k - 1`` degrees of freedom under no shift; ``n`` are Kish's
+    effective sample sizes, so the test does not depend on the scale of the weights.
+
+    Parameters
+    ----------
+    proba : array-like of shape (n, k)
+        Calibrated posteriors of the unlabelled rows.
+    source_prior : array-like of shape (k,)
+        Priors the posteriors were learned under.
+    sample_weight : array-like of shape (n,), default=None
+    source_proba : array-like of shape (m, k), default=None
+        Calibrated posteriors of the labelled rows (None: one-sample test, posteriors taken
+        as exact).
+    source_sample_weight : array-like of shape (m,), default=None
+    source_y : array-like of shape (m,), default=None
+        Class indices of the labelled rows. When given (and ``source_prior`` is their weighted
+        class shares), the labelled mean is the class-stratified mean
+        :math:`\sum_c \pi^s_c \bar u_c` and its variance the stratified
+        :math:`\sum_c (\pi^s_c)^2 s^2_c / (n_c - 1)`: the class shares of the labelled rows
+        are the null hypothesis itself, so their sampling error does not enter (without
+        ``source_y`` the plain two-sample variance is used, which is larger).
+
+    Returns
+    -------
+    ShiftTestResult
+        ``prior`` is None.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift import shift_score_test
+    >>> rng = np.random.default_rng(1)
+    >>> p1 = rng.uniform(0.6, 0.99, size=200)      # every row leans to class 1
+    >>> res = shift_score_test(np.column_stack([1 - p1, p1]), [0.5, 0.5])
+    >>> bool(res.pvalue < 1e-6)
+    True
+    """
+    p, w = _check_target(proba, sample_weight)
+    k = p.shape[1]
+    src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
+    mean, cov, n = _mean_cov(_score_rows(p, src), w)
+    source = None
+    if source_proba is not None:
+        ps, ws = _check_target(source_proba, source_sample_weight, name="source_proba")
+        if ps.shape[1] != k:
+            raise ValueError(f"`source_proba` has {ps.shape[1]} columns but `proba` has {k}.")
+        ys = None
+        if source_y is not None:
+            check_same_length(("source_proba", ps), ("source_y", source_y))
+            ys, _ = check_labels(source_y, name="source_y", classes=np.arange(k), min_classes=1)
+        source = _source_moments(_score_rows(ps, src), ws, ys, src)
+    stat, pvalue = _score_stat_moments((mean, cov, n), source, k)
+    return ShiftTestResult(statistic=stat, pvalue=pvalue, df=k - 1)
+
+
+def _source_moments(
+    u: np.ndarray,
+    w: np.ndarray,
+    y: np.ndarray | None,
+    prior: np.ndarray,
+    n_eff: float | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Mean of the labelled rows' scores and the covariance of that mean.
+
+    With class indices ``y`` the mean is stratified by class, ``sum_c prior_c mean_c``, with
+    covariance ``sum_c prior_c^2 cov_c / (n_c - 1)`` (``n_c`` Kish's count of class ``c``, or
+    ``n_eff`` times the class's weight share when ``n_eff`` overrides it); without, the plain
+    weighted mean with ``cov / (n - 1)``.
+    """
+    if y is None:
+        mean, cov, n = _mean_cov(u, w)
+        n = float(n_eff) if n_eff else n
+        return mean, cov / max(n - 1.0, 1.0)
+    total = float(w.sum())
+    mean = np.zeros(u.shape[1])
+    cov = np.zeros((u.shape[1], u.shape[1]))
+    for c in range(prior.shape[0]):
+        rows = y == c
+        wc = w[rows]
+        if wc.sum() <= 0:
+            continue
+        m_c, c_c, n_c = _mean_cov(u[rows], wc)
+        if n_eff:
+            n_c = float(n_eff) * float(wc.sum()) / total
+        mean = mean + prior[c] * m_c
+        cov = cov + prior[c] ** 2 * c_c / max(n_c - 1.0, 1.0)
+    return mean, cov
+
+
+def _score_stat_moments(target: tuple, source: tuple | None, k: int) -> tuple[float, float]:
+    """Score statistic from the target's (mean, covariance, effective rows) of the per-row
+    scores and the labelled rows' (mean, covariance of the mean)."""
+    mean, cov, n = target
+    total = cov / max(n - 1.0, 1.0)
+    if source is not None:
+        m_s, c_s = source
+        mean = mean - m_s
+        total = total + c_s
+    stat = float(mean @ np.linalg.pinv(total) @ mean) if np.any(total) else 0.0
+    stat = max(stat, 0.0)
+    return stat, float(chi2.sf(stat, k - 1))
+
+
+# -- confusion-matrix estimators ---------------------------------------------------------------
