@@ -12,6 +12,11 @@ Two ways in:
 
 Both report the likelihood-ratio test of "the prevalence has not moved"
 (:func:`probwrap.shift.shift_test`).
+
+With ``--batch-size N`` or ``--batch-column C`` the prevalence is also estimated batch by batch
+(in the order of each batch's first row), and a two-sided CUSUM of the batch estimates against the
+source prevalence (:func:`probwrap.shift.cusum_alarms`; standard error of each batch from its
+interval) names the batches after which a prevalence alarm fired.
 """
 
 from __future__ import annotations
@@ -32,12 +37,13 @@ from ._common import (
     add_resamples_flag,
     check_ranking,
     check_row_count,
+    whole_number,
 )
 from ._cutoff import _level
 from ._progress import Stages, progress
 from ._tables import read_labels, read_table
 
-__all__ = ["register", "prevalence_from_source", "prevalence_from_reference"]
+__all__ = ["register", "prevalence_from_source", "prevalence_from_reference", "batch_alarm_json"]
 
 
 def _prevalence(text: str) -> float:
@@ -157,6 +163,101 @@ def prevalence_from_reference(
     return out
 
 
+def _nonnegative(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{plain(text)!r} is not a number") from None
+    if not (np.isfinite(value) and value >= 0):
+        raise argparse.ArgumentTypeError(f"must be a finite number >= 0; got {text}")
+    return value
+
+
+def _positive(text: str) -> float:
+    value = _nonnegative(text)
+    if value == 0:
+        raise argparse.ArgumentTypeError("must be greater than 0; got 0")
+    return value
+
+
+def batch_alarm_json(
+    batches: list[dict[str, Any]],
+    source_prevalence: float,
+    *,
+    confidence_level: float = 0.95,
+    reference: float = 0.5,
+    decision_interval: float = 5.0,
+) -> dict[str, Any]:
+    """The prevalence alarm of per-batch estimates (each with an ``interval``), as JSON values.
+
+    Examples
+    --------
+    >>> rows = [{"batch": str(i), "prevalence": v, "interval": [v - 0.0078, v + 0.0078]}
+    ...         for i, v in enumerate([0.040, 0.043, 0.038, 0.041, 0.052, 0.055, 0.051, 0.054])]
+    >>> out = batch_alarm_json(rows, 0.040)
+    >>> out["first_alarm"], [a["batch"] for a in out["alarms"]]
+    ('5', ['5', '7'])
+    """
+    from scipy.stats import norm
+
+    from probwrap.shift import cusum_alarms, cusum_run_length
+
+    if any(b["interval"] is None for b in batches):
+        raise ValueError("the prevalence alarm needs an interval per batch (--resamples > 0)")
+    width = np.array([b["interval"][1] - b["interval"][0] for b in batches], dtype=float)
+    if not np.all(width > 0):
+        raise ValueError("a batch's prevalence interval has zero width, so the alarm has no "
+                         "standard error to work with (give larger batches)")
+    se = width / (2.0 * norm.ppf(0.5 + confidence_level / 2.0))
+    prev = np.array([b["prevalence"] for b in batches], dtype=float)
+    res = cusum_alarms(prev, float(source_prevalence), se, reference=reference,
+                       decision_interval=decision_interval)
+    labels = [b["batch"] for b in batches]
+    alarms = [{"batch": labels[i], "index": int(i), "direction": "up" if d > 0 else "down"}
+              for i, d in zip(res.alarms.tolist(), res.direction.tolist(), strict=True)]
+    return {
+        "reference": res.reference,
+        "decision_interval": res.decision_interval,
+        "standard_error": se.tolist(),
+        "upper": res.upper.tolist(),
+        "lower": res.lower.tolist(),
+        "alarms": alarms,
+        "first_alarm": alarms[0]["batch"] if alarms else None,
+        "in_control_run_length": cusum_run_length(
+            0.0, reference=res.reference, decision_interval=res.decision_interval,
+            two_sided=True),
+    }
+
+
+def _batch_labels(frame: Any, args: argparse.Namespace, n: int) -> np.ndarray | None:
+    if args.batch_size is not None:
+        return (np.arange(n) // args.batch_size).astype(str)
+    if args.batch_column is None:
+        return None
+    if args.batch_column not in frame.columns:
+        raise DataError(f"{args.unlabelled}: no column {plain(args.batch_column)!r} "
+                        "(--batch-column)")
+    col = frame[args.batch_column]
+    if col.isna().any():
+        row = int(np.flatnonzero(col.isna().to_numpy())[0])
+        raise DataError(f"{args.unlabelled}: column {plain(args.batch_column)!r} has no batch "
+                        f"label in data row {row + 1} (--batch-column)")
+    return col.astype(str).to_numpy()
+
+
+def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
+              seed: int | None) -> list[dict[str, Any]]:
+    uniq, first, inverse = np.unique(labels, return_index=True, return_inverse=True)
+    rows = []
+    for i, b in enumerate(np.argsort(first, kind="stable")):
+        mask = inverse.ravel() == b
+        res = estimate(proba[mask], None if seed is None else seed + 1 + i)
+        rows.append({"batch": str(uniq[b]), "n_rows": int(mask.sum()),
+                     "prevalence": res["prevalence"], "interval": res["interval"],
+                     "shift_pvalue": res["shift_pvalue"]})
+    return rows
+
+
 def _result(prev, converged, method, n, source, test) -> dict[str, Any]:
     return {
         "prevalence": float(prev),
@@ -187,6 +288,24 @@ def _text(out: dict[str, Any], path: str, level: float) -> str:
     ]
     if not out["converged"]:
         lines.append("  note: the estimate's iterations did not converge; treat it with care")
+    if "alarm" in out:
+        a = out["alarm"]
+        fired = {x["index"]: x["direction"] for x in a["alarms"]}
+        lines.append(f"  by batch ({len(out['batches'])} batches; CUSUM in standard errors)")
+        lines.append("    batch        rows  prevalence  interval            rise   fall")
+        for i, b in enumerate(out["batches"]):
+            lo, hi = b["interval"]
+            mark = f"  ALARM ({fired[i]})" if i in fired else ""
+            lines.append(f"    {b['batch'][:10]:<10} {b['n_rows']:>6}  {b['prevalence']:.4f}    "
+                         f"[{lo:.4f}, {hi:.4f}]  {a['upper'][i]:5.2f}  {a['lower'][i]:5.2f}"
+                         f"{mark}")
+        verdict = (f"first alarm after batch {a['first_alarm']} ({len(a['alarms'])} in all)"
+                   if a["alarms"] else "no alarm")
+        lines.append(
+            f"  prevalence alarm      {verdict}; two-sided CUSUM, k = {a['reference']:g}, "
+            f"h = {a['decision_interval']:g}; in control it sounds about once every "
+            f"{a['in_control_run_length']:.0f} batches"
+        )
     return "\n".join(lines)
 
 
@@ -196,6 +315,7 @@ def _run(args: argparse.Namespace) -> int:
         stages.start("reading")
         frame = read_table(args.unlabelled, exact=[args.score_column])
         proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale)
+        batch_labels = _batch_labels(frame, args, proba.shape[0])
         if args.scale == "log-odds":
             from probwrap.calibration import log_odds_to_proba
 
@@ -232,6 +352,20 @@ def _run(args: argparse.Namespace) -> int:
                         recalibrate=not args.no_recalibration, **settings,
                     )
                     out["labels"] = {"negative": labels[0], "positive": labels[1]}
+                if batch_labels is not None:
+                    def one(p: np.ndarray, seed: int | None) -> dict[str, Any]:
+                        kw = {**settings, "seed": seed}
+                        if args.reference is None:
+                            return prevalence_from_source(p, args.source_prevalence, **kw)
+                        return prevalence_from_reference(
+                            p, ref_scores, ref_y, method=args.method,
+                            recalibrate=not args.no_recalibration, **kw)
+
+                    out["batches"] = _by_batch(one, proba, batch_labels, args.seed)
+                    out["alarm"] = batch_alarm_json(
+                        out["batches"], out["source_prevalence"],
+                        confidence_level=args.confidence, reference=args.alarm_reference,
+                        decision_interval=args.alarm_decision_interval)
             except (ValueError, FloatingPointError, ZeroDivisionError) as exc:
                 raise DataError(
                     f"{args.unlabelled}: the prevalence cannot be estimated ({exc})"
@@ -295,6 +429,26 @@ def register(subparsers: Any) -> None:
         help="coverage of the interval (default 0.95)",
     )
     parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
+    batching = parser.add_mutually_exclusive_group()
+    batching.add_argument(
+        "--batch-size", type=whole_number(1), metavar="N",
+        help="also estimate the prevalence per batch of N consecutive rows and run the "
+        "prevalence alarm (a two-sided CUSUM) on the batch estimates",
+    )
+    batching.add_argument(
+        "--batch-column", metavar="C",
+        help="as --batch-size, with batches given by the labels of column C (a week, a date)",
+    )
+    parser.add_argument(
+        "--alarm-reference", type=_nonnegative, default=0.5, metavar="K",
+        help="reference value k of the alarm, in standard errors: half the shift it should "
+        "catch fastest (default 0.5)",
+    )
+    parser.add_argument(
+        "--alarm-decision-interval", type=_positive, default=5.0, metavar="H",
+        help="decision interval h of the alarm, in standard errors: larger means fewer false "
+        "alarms and slower detection (default 5: about one false alarm in 465 batches)",
+    )
     add_format_flag(parser)
 
     def run(args: argparse.Namespace) -> int:
@@ -308,6 +462,9 @@ def register(subparsers: Any) -> None:
                 )
         elif args.label_column is None:
             parser.error("--reference needs --label-column")
+        if (args.batch_size is not None or args.batch_column is not None) and not args.resamples:
+            parser.error("--batch-size and --batch-column need --resamples > 0 (the alarm reads "
+                         "each batch's standard error from its interval)")
         return _run(args)
 
     parser.set_defaults(func=run)
