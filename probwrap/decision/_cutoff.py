@@ -302,7 +302,10 @@ def _neighbour_middles(u: np.ndarray, lo_ext: float, hi_ext: float) -> np.ndarra
         inner = mid[1:m]
         with np.errstate(over="ignore", invalid="ignore"):
             np.subtract(u[1:], u[:-1], out=inner)
-        overflow = np.flatnonzero(~np.isfinite(inner))
+        # a gap overflows only if the whole range does (one subtraction decides)
+        with np.errstate(over="ignore"):
+            wide = not np.isfinite(u[-1] - u[0])
+        overflow = np.flatnonzero(~np.isfinite(inner)) if wide else np.empty(0, dtype=np.intp)
         inner *= 0.5
         inner += u[:-1]
         if overflow.size:
