@@ -298,11 +298,9 @@ def test_dropped_resamples_are_counted_and_reported():
 
 
 def test_every_resample_dropped_gives_the_whole_range_and_says_so():
-    # One labelled row of class 1: a Poisson(1) resample loses it with probability exp(-1);
-    # with the source rows' class-1 weight zero in every resample (all resamples drawn with
-    # that row absent is what we force here by giving it weight that vanishes under the
-    # resample: a single row, 3 resamples, seed chosen so that all three drop it) the
-    # interval is [0, 1] for every class and two warnings say why.
+    # One labelled row of class 1: a Poisson(1) resample loses it with probability e^-1, so
+    # with 3 resamples some seed among the first 200 drops it in all three. Then the interval
+    # is [0, 1] for every class, and two warnings say how many were dropped and why.
     rng = np.random.default_rng(8)
     p_src, y_src = binary_gaussian(200, 0.5, rng)
     y_src[:] = 0
