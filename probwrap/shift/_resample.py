@@ -9,7 +9,6 @@ from the resampled estimates.
 from __future__ import annotations
 
 import warnings
-from typing import Any
 
 import numpy as np
 from scipy.special import expit
@@ -195,32 +194,6 @@ class _Resampling:
         if np.any(col <= 0):
             return None
         return _simplex_least_squares(c / col, mu)[0]
-
-    def replicate_draws(
-        self,
-        target_proba: np.ndarray,
-        draw_source: Any,
-        draw_target: Any,
-        n_replicates: int,
-        init: np.ndarray,
-    ) -> tuple[np.ndarray, int]:
-        """Estimates under ``n_replicates`` pairs of replicate weights; returns (draws, n_dropped).
-
-        ``draw_source(b)`` gives labelled row weights (or None: labelled rows as fitted),
-        ``draw_target(b)`` target row weights.
-        """
-        z_t = proba_to_log_proba(target_proba) if self.calibrator_ is not None else None
-        p_t = self.calibrate(target_proba)
-        draws, dropped = [], 0
-        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            for b in range(n_replicates):
-                est = self._replicate(z_t, p_t, draw_source(b), draw_target(b), init)
-                if est is None:
-                    dropped += 1
-                else:
-                    draws.append(est)
-        k = self.n_classes_
-        return (np.asarray(draws) if draws else np.empty((0, k))), dropped
 
     def _bootstrap(
         self,
