@@ -549,6 +549,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
                 self._interval_inputs = (p, ho.y_index, matrix, ho.sample_weight, ho.fold, share)
             else:
                 self.cost_curve_ = _thin_cost_curve(res, CURVE_POINTS)
+                del res  # the full curve (three arrays as long as the rows) goes before the tally
                 self._interval_inputs = (
                     "summary", _heldout_summary(self, p, ho, matrix, share), matrix, share
                 )
@@ -723,19 +724,34 @@ def _heldout_summary(policy: CostPolicyWrapper, p: np.ndarray, ho: Any, matrix, 
                 p[rows], ho.y_index[rows], matrix, sample_weight=w[rows], capacity=share,
                 score_bounds=(0.0, 1.0),
             ).cutoff)
-    present = w > 0
+    # (written for memory: at most two temporaries as long as the rows besides the log-odds)
+    present = None if np.all(w > 0) else np.flatnonzero(w > 0)
+    pp = p if present is None else p[present]
     with np.errstate(divide="ignore"):
-        s = np.log(p[present]) - np.log1p(-p[present])
+        s = np.log(pp)
+        other = np.negative(pp)
+        np.log1p(other, out=other)
+        s -= other
+    del other, pp
     # probabilities of exactly 0 or 1 go to the outermost finite bins' neighbours
-    finite = s[np.isfinite(s)]
-    span = (finite.max() - finite.min()) if finite.size else 1.0
-    s = np.clip(s, (finite.min() if finite.size else 0.0) - 1.0, (finite.max() if finite.size else 0.0) + 1.0)
+    finite = np.isfinite(s)
+    lo_f = float(np.min(s, where=finite, initial=np.inf))
+    hi_f = float(np.max(s, where=finite, initial=-np.inf))
+    del finite
+    if lo_f > hi_f:  # no finite log-odds at all
+        lo_f = hi_f = 0.0
+        span = 1.0
+    else:
+        span = hi_f - lo_f
+    np.clip(s, lo_f - 1.0, hi_f + 1.0, out=s)
     resolution = check_resolution(policy.tally_resolution)
     while (span + 2.0) / resolution > SUMMARY_BINS:
         resolution *= 2.0
-    y = ho.y_index[present]
-    weighted = tally_scores(s, y, sample_weight=w[present], resolution=resolution)
-    rows = tally_scores(s, y, resolution=resolution)
+    y = ho.y_index if present is None else ho.y_index[present]
+    wp = w if present is None else w[present]
+    chunk = 1 << 16  # the tally's temporaries stay a small share of the rows
+    weighted = tally_scores(s, y, sample_weight=wp, resolution=resolution, chunk_size=chunk)
+    rows = tally_scores(s, y, resolution=resolution, chunk_size=chunk)
     return {"weighted": weighted, "rows": rows.counts, "folds": np.asarray(fold_cutoffs, float)}
 
 

@@ -180,7 +180,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     "classes."
                 )
             values = np.asarray(getattr(estimator, response)(X), dtype=float)
-            fold = np.full(n, -1, dtype=int)
+            # every row is in no fold: a read-only view of one value, not n of them
+            fold = np.broadcast_to(np.array(-1, dtype=int), (n,))
             n_folds = 0
             classes = est_classes
         else:
@@ -245,7 +246,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             response=response,
             classes=self.classes_,
             y_index=np.asarray(y_index, dtype=int),
-            sample_weight=sw if sw is not None else np.ones(n, dtype=float),
+            # unit weights as a read-only view of one value (no per-row array)
+            sample_weight=sw if sw is not None else np.broadcast_to(np.array(1.0), (n,)),
             fold=fold,
             n_folds=n_folds,
             estimator=estimator,

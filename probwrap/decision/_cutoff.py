@@ -302,7 +302,10 @@ def _neighbour_middles(u: np.ndarray, lo_ext: float, hi_ext: float) -> np.ndarra
         inner = mid[1:m]
         with np.errstate(over="ignore", invalid="ignore"):
             np.subtract(u[1:], u[:-1], out=inner)
-        overflow = np.flatnonzero(~np.isfinite(inner))
+        # a gap overflows only if the whole range does (one subtraction decides)
+        with np.errstate(over="ignore"):
+            wide = not np.isfinite(u[-1] - u[0])
+        overflow = np.flatnonzero(~np.isfinite(inner)) if wide else np.empty(0, dtype=np.intp)
         inner *= 0.5
         inner += u[:-1]
         if overflow.size:
@@ -314,54 +317,34 @@ def _neighbour_middles(u: np.ndarray, lo_ext: float, hi_ext: float) -> np.ndarra
     return mid
 
 
-def _middles_in_place(buf: np.ndarray, m: int, lo_ext: float, hi_ext: float) -> np.ndarray:
-    """Overwrite ``buf[:m]`` (the distinct scores ``u``) with ``buf[:m + 1]``, the middles of
-    ``[lo_ext, u...]`` and ``[u..., hi_ext]``; the values equal :func:`_neighbour_middles`.
-
-    Works from the top down in chunks, so only a chunk-sized copy is ever made.
-    """
-    mid_top = _middle(buf[m - 1], hi_ext)
-    chunk = max(1 << 12, m // 32)  # the temporaries of a chunk stay a small share of the scores
-    b = m
-    while b > 1:
-        a = max(1, b - chunk)
-        u_lo = buf[a - 1 : b - 1].copy()
-        u_hi = buf[a:b].copy()
-        buf[a:b] = _neighbour_middles(np.concatenate([u_lo, u_hi[-1:]]), 0.0, 0.0)[1:-1]
-        b = a
-    buf[0] = _middle(lo_ext, buf[0])
-    buf[m] = mid_top
-    return buf[: m + 1]
-
-
 def _search_plain_rows(
     s: np.ndarray, y: np.ndarray, matrix: np.ndarray, cap: float | None, bounds
 ) -> CutoffSearchResult:
     """:func:`_search_rows` for unweighted rows and one cost matrix, near the cost of one sort.
 
     The scores of each class are sorted separately with plain sorts (no index), then the two
-    sorted runs are merged by a stable sort, which is linear for two runs: a stable ``argsort``
-    of the runs tells which merged entries are positives, and sorting the runs in place with the
-    same (stable) algorithm puts the scores in that same order. No per-row index into the
-    original rows is ever needed. Buffers are reused in place (the representative cutoffs
-    overwrite the sorted scores), so that the peak memory stays near the three arrays of the
-    returned curve.
+    sorted runs are merged: a stable ``argsort`` of the two runs (one linear merge) tells which
+    merged entries are positives and, gathered through, gives the merged scores. No per-row
+    index into the original rows is needed. The flagged shares are built only once the sorted
+    scores are freed (the capacity check reads the few shares it needs), so that the peak
+    memory stays near the three arrays of the returned curve.
     """
     n = s.shape[0]
     positive = y == 1
     n_pos = int(np.count_nonzero(positive))
     n_neg = n - n_pos
-    runs = np.empty(n + 1)  # one spare slot: the cutoffs (m + 1 of them) are written here later
+    runs = np.empty(n)
     part = s[np.flatnonzero(~positive)]
     part.sort()
     runs[:n_neg] = part
     part = s[np.flatnonzero(positive)]
     part.sort()
-    runs[n_neg:n] = part
+    runs[n_neg:] = part
     del positive, part
-    ss = runs[:n]
-    is_pos = np.argsort(ss, kind="stable") >= n_neg  # the index array is freed at once
-    ss.sort(kind="stable")  # the same stable merge: the scores in the order of is_pos
+    order = np.argsort(runs, kind="stable")  # two sorted runs: one linear merge
+    ss = runs[order]  # the merged scores (a gather along two monotone runs)
+    is_pos = order >= n_neg
+    del order, runs
     last = np.empty(n, dtype=bool)
     np.not_equal(ss[1:], ss[:-1], out=last[:-1])
     last[-1] = True
@@ -372,24 +355,23 @@ def _search_plain_rows(
     total_flag_all = float(np.dot(np.array([n_neg, n_pos], dtype=float), matrix[:, 1]))
     if last.all():
         del last
-        u_buf, m = runs, n
+        u, m, ends = ss, n, None
+        del ss
         cost = np.empty(n + 1)
-        step = cost[1:]
-        ends = None
+        step = cost[1:]  # filled and summed in place
     else:
         ends = np.flatnonzero(last)
         del last
         m = ends.shape[0]
-        u_buf = np.empty(m + 1)
-        np.take(ss, ends, out=u_buf[:m])
+        u = ss[ends]
+        del ss
         cost = np.empty(m + 1)
-        step = ss  # the sorted scores are no longer needed: reuse their memory
-    del ss, runs
-    u = u_buf[:m]
-    # the same per-row values and the same cumulative sum as the general path (a two-entry
-    # look-up by the 0/1 flag is several times faster than filling by mask)
-    np.cumsum(np.array([d_neg, d_pos])[is_pos.view(np.uint8)], out=step)
+        step = np.empty(n)
+    # (filled by mask in place: a look-up table indexed by the flags would make an index array)
+    step.fill(d_neg)
+    np.copyto(step, d_pos, where=is_pos)
     del is_pos
+    np.cumsum(step, out=step)
     if ends is not None:
         np.take(step, ends, out=cost[1:])
     del step
@@ -405,7 +387,32 @@ def _search_plain_rows(
             lo_ext = bounds[0]
         if bounds[1] > u[-1]:
             hi_ext = bounds[1]
-    # flagged share of decision j: the rows above the j-th distinct score
+
+    def share_at(j: int) -> float:
+        # flagged share of decision j (the rows above the j-th distinct score), by the same
+        # operations as the array built below
+        if j == m:
+            return 0.0
+        rows_at_or_below = 0 if j == 0 else (j if ends is None else int(ends[j - 1]) + 1)
+        return (float(n) - float(rows_at_or_below)) / float(n)
+
+    admissible = np.ones(m + 1, dtype=bool)
+    if cap is not None:
+        # the share falls with j, so the admissible decisions are all those from the first one
+        first, past = 0, m  # share_at(m) = 0 is always admissible
+        while first < past:
+            j = (first + past) // 2
+            if share_at(j) <= cap * (1 + 1e-12):
+                past = j
+            else:
+                first = j + 1
+        admissible[:first] = False
+    lower = _DecisionEnds(u, lo_ext, hi_ext, upper=False)
+    upper = _DecisionEnds(u, lo_ext, hi_ext, upper=True)
+    index, value, lo, hi, flat = _pick_optimum(cost, lower, upper, admissible)
+    del lower, upper
+    mid = _neighbour_middles(u, lo_ext, hi_ext)
+    del u
     if ends is None:
         share = np.arange(n, -1, -1, dtype=np.float64)
     else:
@@ -415,12 +422,6 @@ def _search_plain_rows(
         del ends
     share[-1] = 0.0
     share /= float(n)
-    admissible = np.ones(m + 1, dtype=bool) if cap is None else share <= cap * (1 + 1e-12)
-    lower = _DecisionEnds(u, lo_ext, hi_ext, upper=False)
-    upper = _DecisionEnds(u, lo_ext, hi_ext, upper=True)
-    index, value, lo, hi, flat = _pick_optimum(cost, lower, upper, admissible)
-    del lower, upper, u
-    mid = _middles_in_place(u_buf, m, lo_ext, hi_ext)
     return CutoffSearchResult(
         cutoff=value,
         cost=float(cost[index]),
@@ -592,9 +593,15 @@ def _thin_cost_curve(result: CutoffSearchResult, max_points: int) -> CutoffSearc
     m1 = result.costs.shape[0]
     if m1 <= max_points:
         return result
-    c = np.where(result.admissible, result.costs, np.inf)
+    # (no temporaries as long as the curve when every decision is admissible)
+    if result.admissible.all():
+        c = result.costs
+        scale = max(abs(float(c.max())), abs(float(c.min())))
+    else:
+        c = np.where(result.admissible, result.costs, np.inf)
+        scale = (float(np.max(np.abs(result.costs[result.admissible])))
+                 if result.admissible.any() else 0.0)
     best = float(c.min())
-    scale = float(np.max(np.abs(result.costs[result.admissible]))) if result.admissible.any() else 0.0
     opt = np.flatnonzero(c <= best + 1e-9 * scale)
     breaks = np.flatnonzero(np.diff(opt) > 1)
     run_ends = np.concatenate([opt[np.concatenate([[0], breaks + 1])],
