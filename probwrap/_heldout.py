@@ -41,8 +41,11 @@ __all__ = ["HeldOutClassifierBase", "HeldOutPredictions"]
 
 
 def _is_dask(obj: Any) -> bool:
-    """Whether ``obj`` is a Dask collection (checked without importing Dask)."""
-    return hasattr(obj, "__dask_graph__")
+    """Whether ``obj`` is a Dask collection or a Spark DataFrame (rows the wrappers tally where
+    they live, through ``probwrap.scale._entry``); checked without importing either."""
+    return hasattr(obj, "__dask_graph__") or (
+        type(obj).__module__.startswith("pyspark.sql") and hasattr(obj, "mapInPandas")
+    )
 
 
 def _multiclass_dask(estimator: Any, X: Any, y: Any, sample_weight: Any) -> bool:
