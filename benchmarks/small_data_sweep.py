@@ -1,0 +1,411 @@
+"""Trust sweep: probwrap on small and awkward draws of real bundled data sets.
+
+Data sets nobody on the project wrote: scikit-learn's bundled iris, wine, breast cancer and
+digits and statsmodels' bundled sets (the loaders of ``benchmarks/calibration.py``). For each
+data set and seed a base model (Gaussian naive Bayes, random forest — whose probabilities
+include exact 0 and 1 —, a linear SVM wrapped in ``CalibrationWrapper`` for its margins) is
+trained on one split and frozen; then small calibration sets are drawn:
+
+* ``n20`` / ``n60``: stratified draws of 20 and 60 rows;
+* ``rare``: one class kept at 1-3 rows (binary: a single positive);
+* ``lowprev``: binary sets thinned to ~5 % prevalence (weak models at low prevalence).
+
+On every draw the wrappers and the array-core functions are run and these problems counted:
+
+* ``crash``: an exception other than a ValueError/TypeError whose message names an argument
+  in backticks (a clear refusal is correct behaviour and not counted);
+* ``nonfinite``, ``exact0/1``, ``rowsum``: probabilities that are not finite, exactly 0 or 1,
+  or rows not summing to 1;
+* ``inplace``: ``X``, ``y`` or ``sample_weight`` modified by a call;
+* ``wscale``: a choice (auto's method, the tuned cutoff / offsets, the adapted prior, an array
+  metric) that changes when all weights are normalised to sum 1 or scaled by 1e-3;
+* ``freq``: integer frequency weights giving a different array-core result than duplicated rows;
+* ``harm``: test log loss above 1.10 x the base model's (probabilities clipped at 1e-15), on
+  test sets of at least 200 rows (smaller test sets are noise).
+
+Printed: a table of problem counts by kind and component ("none" where none), then the
+first problems with their draw.
+
+Run: ``nice python benchmarks/small_data_sweep.py`` (minutes) or ``--quick`` (iris, wine,
+breast cancer; naive Bayes and forest; one seed; about a minute).
+"""
+
+from __future__ import annotations
+
+import collections
+import re
+import sys
+import warnings
+from pathlib import Path
+
+import numpy as np
+from sklearn.ensemble import RandomForestClassifier
+from sklearn.frozen import FrozenEstimator
+from sklearn.naive_bayes import GaussianNB
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+from sklearn.svm import LinearSVC
+
+sys.path.insert(0, str(Path(__file__).parent))
+from calibration import _statsmodels_sets  # noqa: E402
+from sklearn.datasets import load_breast_cancer, load_digits, load_iris, load_wine  # noqa: E402
+
+from probwrap import (  # noqa: E402
+    CalibrationWrapper,
+    CostPolicyWrapper,
+    PriorShiftWrapper,
+    decision,
+    metrics,
+)
+
+CAL_METHODS = ["auto", "platt", "isotonic", "beta", "temperature", "binning", "venn_abers"]
+HARM_LIMIT = 1.10
+MIN_TEST_FOR_HARM = 200
+CLEAR = re.compile(r"`[^`]+`")
+
+problems: collections.Counter = collections.Counter()
+examples: dict = {}
+components: set = set()
+
+
+def note(component: str, kind: str, where: str, detail: str = "") -> None:
+    problems[(component, kind)] += 1
+    examples.setdefault((component, kind), f"{where}: {detail}"[:300])
+
+
+def run(component: str, where: str, fn, *args, **kwargs):
+    """Call fn; count unclear exceptions and in-place modification of array arguments."""
+    components.add(component)
+    arrays = [a for a in list(args) + list(kwargs.values()) if isinstance(a, np.ndarray)]
+    before = [a.copy() for a in arrays]
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            out = fn(*args, **kwargs)
+    except decision.GuaranteeUnreachableError:
+        return None  # a documented, explained refusal
+    except (ValueError, TypeError) as e:
+        if not CLEAR.search(str(e)):
+            note(component, "crash", where, f"{type(e).__name__}: {e}")
+        return None
+    except Exception as e:  # noqa: BLE001 - counting every other failure is the point
+        note(component, "crash", where, f"{type(e).__name__}: {e}")
+        return None
+    for a, b in zip(arrays, before, strict=True):
+        if a.shape != b.shape or not np.array_equal(a, b, equal_nan=True):
+            note(component, "inplace", where)
+    return out
+
+
+def check_proba(component: str, where: str, p, k: int) -> bool:
+    if p is None:
+        return False
+    p = np.asarray(p, float)
+    if not np.all(np.isfinite(p)):
+        note(component, "nonfinite", where)
+        return False
+    if np.any(p <= 0) or np.any(p >= 1):
+        note(component, "exact0/1", where, f"{np.mean((p <= 0) | (p >= 1)):.1%} of entries")
+    if p.ndim != 2 or p.shape[1] != k or not np.allclose(p.sum(1), 1, atol=1e-9):
+        note(component, "rowsum", where)
+    return True
+
+
+def test_log_loss(y_index, p) -> float:
+    return float(-np.mean(np.log(np.clip(p[np.arange(len(y_index)), y_index], 1e-15, 1))))
+
+
+def check_harm(component, where, y_index, p, base):
+    if p is None or len(y_index) < MIN_TEST_FOR_HARM:
+        return
+    r = test_log_loss(y_index, p) / max(test_log_loss(y_index, base), 1e-12)
+    if r > HARM_LIMIT:
+        note(component, "harm", where, f"log loss {r:.2f} x base")
+
+
+def same(a, b) -> bool:
+    if a is None or b is None:
+        return True  # a failure was already counted
+    if isinstance(a, str) or isinstance(b, str):
+        return a == b
+    a, b = np.asarray(a, float), np.asarray(b, float)
+    return a.shape == b.shape and np.allclose(a, b, rtol=1e-6, atol=1e-9, equal_nan=True)
+
+
+# --------------------------------------------------------------------------- data
+def data_sets(quick: bool):
+    X, y = load_iris(return_X_y=True)
+    yield "iris", X, y
+    X, y = load_breast_cancer(return_X_y=True)
+    yield "breast_cancer", X, y
+    X, y = load_wine(return_X_y=True)
+    yield "wine", X, y
+    if quick:
+        return
+    X, y = load_digits(return_X_y=True)
+    yield "digits", X, y
+    for name, X, y in _statsmodels_sets():
+        yield "statsmodels " + name.split(":")[0].split()[-1] + name.split(":")[1][:12], X, y
+
+
+def base_models(quick: bool, seed: int):
+    yield "naive_bayes", GaussianNB()
+    yield "forest", RandomForestClassifier(n_estimators=50, random_state=seed)
+    if not quick:
+        yield "svm_margins", make_pipeline(StandardScaler(), LinearSVC())
+
+
+def draws(y_index: np.ndarray, pool: np.ndarray, k: int, rng):
+    """(name, calibration rows) pairs of small and awkward calibration sets."""
+    for n in (20, 60):
+        if len(pool) >= n:
+            yield f"n{n}", rng.choice(pool, n, replace=False)
+    by_class = [pool[y_index[pool] == c] for c in range(k)]
+    if min(len(b) for b in by_class) >= 3:
+        rare = int(np.argmin([len(b) for b in by_class]))
+        n_rare = 1 if k == 2 else int(rng.integers(1, 4))
+        others = [rng.choice(b, min(len(b), 40 // (k - 1)), replace=False)
+                  for c, b in enumerate(by_class) if c != rare]
+        yield f"rare{n_rare}", np.concatenate([rng.choice(by_class[rare], n_rare, replace=False),
+                                               *others])
+    if k == 2:
+        pos = by_class[1] if len(by_class[1]) < len(by_class[0]) else by_class[0]
+        neg = by_class[0] if pos is by_class[1] else by_class[1]
+        n_neg = min(len(neg), 95)
+        n_pos = max(2, int(round(0.05 * n_neg)))
+        if len(pos) >= n_pos:
+            yield "lowprev", np.concatenate([rng.choice(pos, n_pos, replace=False),
+                                             rng.choice(neg, n_neg, replace=False)])
+
+
+def weight_variants(n: int, rng):
+    """Weights that must give the same choice: integer weights normalised to sum 1 and scaled
+    by 1e-3 (neither can be row frequencies), then unit weights and unit weights summing to 1."""
+    w = rng.integers(1, 4, n).astype(float)
+    return [(w / w.sum(), w * 1e-3), (np.ones(n), np.full(n, 1.0 / n))]
+
+
+def all_weights(n: int, rng):
+    return [sw for pair in weight_variants(n, rng) for sw in pair]
+
+
+def pairs_differ(values) -> bool:
+    return not (same(values[0], values[1]) and same(values[2], values[3]))
+
+
+# --------------------------------------------------------------------------- checks
+def sweep_calibration(frozen, Xc, yc, Xt, yt_i, base_t, k, where, rng, quick):
+    for meth in (CAL_METHODS[:3] if quick else CAL_METHODS):
+        comp = f"CalibrationWrapper[{meth}]"
+        w = run(comp, where, lambda meth=meth: CalibrationWrapper(
+            frozen, method=meth, random_state=0).fit(Xc, yc))
+        if w is None:
+            continue
+        p = run(comp, where, w.predict_proba, Xt)
+        if check_proba(comp, where, p, k):
+            check_harm(comp, where, yt_i, p, base_t)
+        if meth == "auto":
+            chosen = []
+            for sw in all_weights(len(yc), rng):
+                sw_in = sw.copy()
+                m = run(comp, where, lambda sw_in=sw_in: CalibrationWrapper(
+                    frozen, method="auto", random_state=0).fit(Xc, yc, sample_weight=sw_in))
+                if not np.array_equal(sw, sw_in):
+                    note(comp, "inplace", where, "sample_weight")
+                chosen.append(None if m is None else m.method_)
+            if pairs_differ(chosen):
+                note(comp, "wscale", where, f"chose {chosen}")
+
+
+def sweep_prior(frozen, Xc, yc, Xt, yt_i, base_t, k, where, rng):
+    comp = "PriorShiftWrapper"
+    ps = run(comp + ".fit", where, lambda: PriorShiftWrapper(
+        frozen, random_state=0, n_resamples=30).fit(Xc, yc))
+    if ps is None:
+        return
+    p0 = run(comp + ".predict_proba", where, ps.predict_proba, Xt)
+    check_proba(comp + ".predict_proba", where, p0, k)
+    ad = run(comp + ".adapt", where, ps.adapt, Xt)
+    if ad is not None:
+        p1 = run(comp + ".adapt", where, ad.predict_proba, Xt)
+        if check_proba(comp + ".adapt", where, p1, k):
+            check_harm(comp + ".adapt", where, yt_i, p1, base_t)
+    run(comp + ".monitor", where, ps.monitor, Xt, batch_size=max(20, len(Xt) // 4))
+    priors = []
+    for sw in all_weights(len(Xt), rng):
+        sw_in = sw.copy()
+        m = run(comp + ".adapt", where, lambda sw_in=sw_in: PriorShiftWrapper(
+            frozen, random_state=0, n_resamples=30).fit(Xc, yc).adapt(Xt, sample_weight=sw_in))
+        if not np.array_equal(sw, sw_in):
+            note(comp + ".adapt", "inplace", where, "sample_weight")
+        priors.append(None if m is None else getattr(m, "target_prior_", None))
+    if pairs_differ(priors):
+        note(comp + ".adapt", "wscale", where, f"{priors}")
+
+
+def sweep_cost(frozen, Xc, yc, k, where, rng):
+    costs = decision.zero_one_costs(k) * (1 + np.arange(k))[:, None]
+    for strategy in ("bayes", "tuned"):
+        comp = f"CostPolicyWrapper[{strategy}]"
+        cp = run(comp, where, lambda strategy=strategy: CostPolicyWrapper(
+            frozen, costs=costs, strategy=strategy, random_state=0, n_resamples=30).fit(Xc, yc))
+        if cp is None:
+            continue
+        run(comp, where, cp.predict, Xc)
+        if strategy == "tuned":
+            if k == 2:
+                run(comp + ".cutoff_interval_", where, lambda cp=cp: cp.cutoff_interval_)
+            picks = []
+            for sw in all_weights(len(yc), rng):
+                sw_in = sw.copy()
+                m = run(comp, where, lambda sw_in=sw_in: CostPolicyWrapper(
+                    frozen, costs=costs, strategy="tuned", random_state=0,
+                    n_resamples=30).fit(Xc, yc, sample_weight=sw_in))
+                if not np.array_equal(sw, sw_in):
+                    note(comp, "inplace", where, "sample_weight")
+                picks.append(None if m is None else (
+                    m.cutoff_ if k == 2 else getattr(m, "offsets_", None)))
+            if pairs_differ(picks):
+                note(comp, "wscale", where, f"{picks}")
+    comp = "CostPolicyWrapper[guarantee]"
+    g = ({"requirement": "recall", "target": 0.8} if k == 2
+         else {"recall_floors": {0: 0.5}})
+    run(comp, where, lambda: CostPolicyWrapper(
+        frozen, costs=costs, strategy="tuned", guarantee=g, random_state=0,
+        n_resamples=30).fit(Xc, yc))
+
+
+METRICS = ["log_loss", "brier_score", "expected_calibration_error", "classwise_calibration_error",
+           "brier_decomposition", "calibration_slope_intercept", "hosmer_lemeshow_test",
+           "spiegelhalter_z_test", "smooth_calibration_error", "debiased_calibration_error",
+           "corp_reliability"]
+
+
+def summary(x):
+    """A metric's numbers, for comparisons."""
+    if x is None:
+        return None
+    if np.isscalar(x):
+        return np.array([x], float)
+    vals = []
+    for f in getattr(x, "_fields", None) or getattr(x, "__dataclass_fields__", {}):
+        v = getattr(x, f)
+        if np.isscalar(v) and not isinstance(v, str):
+            vals.append(float(v))
+    return np.array(vals)
+
+
+def sweep_array_core(p, y, k, where, rng):
+    """Metrics and decision functions on held-out probabilities ``p`` and labels ``y``."""
+    binary = k == 2
+    y_prob = p[:, 1] if binary else p
+    ws = all_weights(len(y), rng)
+    w = rng.integers(1, 4, len(y)).astype(float)  # integer frequencies
+    dup = np.repeat(np.arange(len(y)), w.astype(int))
+    for name in METRICS:
+        comp = "metrics." + name
+        fn = getattr(metrics, name)
+        if name in ("calibration_slope_intercept", "hosmer_lemeshow_test", "spiegelhalter_z_test",
+                    "corp_reliability") and not binary:
+            continue
+        outs = [summary(run(comp, where, fn, y, y_prob, sample_weight=s.copy())) for s in ws]
+        if pairs_differ(outs):
+            note(comp, "wscale", where, f"{outs}")
+        fw = summary(run(comp, where, fn, y, y_prob, sample_weight=w.copy()))
+        d = summary(run(comp, where, fn, y[dup], y_prob[dup]))
+        if not same(fw, d):
+            note(comp, "freq", where, f"weights {fw} vs duplicated {d}")
+        run(comp, where, fn, y, y_prob.copy())
+    costs = decision.zero_one_costs(k) * (1 + np.arange(k))[:, None]
+    comp = "decision.bayes_actions"
+    run(comp, where, decision.bayes_actions, p, costs)
+    if binary:
+        s = np.log(np.clip(p[:, 1], 1e-300, 1)) - np.log(np.clip(p[:, 0], 1e-300, 1))
+        s = np.clip(s, -50, 50)
+        comp = "decision.search_cutoff"
+        outs = [run(comp, where, decision.search_cutoff, s, y, costs, sample_weight=sw.copy())
+                for sw in ws]
+        cut = [None if o is None else o.cutoff for o in outs]
+        if pairs_differ(cut):
+            note(comp, "wscale", where, f"{cut}")
+        fw = run(comp, where, decision.search_cutoff, s, y, costs, sample_weight=w.copy())
+        d = run(comp, where, decision.search_cutoff, s[dup], y[dup], costs)
+        if d is not None and fw is not None and not same(fw.cutoff, d.cutoff):
+            note(comp, "freq", where, f"{fw.cutoff} vs {d.cutoff}")
+        comp = "decision.cutoff_interval"
+        ivs = [run(comp, where, decision.cutoff_interval, s, y, costs, sample_weight=sw.copy(),
+                   n_resamples=30, random_state=0) for sw in ws[:2]]
+        if all(iv is not None for iv in ivs) and not same(
+                [ivs[0].low, ivs[0].high], [ivs[1].low, ivs[1].high]):
+            note(comp, "wscale", where, f"{ivs}")
+        sw0 = w.copy()
+        sw0[: len(sw0) // 2] = 0.0
+        run(comp, where, decision.cutoff_interval, s, y, costs, sample_weight=sw0,
+            n_resamples=30, random_state=0)
+        run("decision.guaranteed_cutoff", where, decision.guaranteed_cutoff, s, y, costs,
+            requirement="recall", target=0.8)
+    else:
+        comp = "decision.tune_class_offsets"
+        outs = [run(comp, where, decision.tune_class_offsets, p, y, costs, sample_weight=sw.copy())
+                for sw in ws]
+        offs = [None if o is None else getattr(o, "offsets", None) for o in outs]
+        if pairs_differ(offs):
+            note(comp, "wscale", where, f"{offs}")
+
+
+# --------------------------------------------------------------------------- main
+def main(argv: list[str]) -> None:
+    quick = "--quick" in argv
+    seeds = range(1) if quick else range(3)
+    n_draws = 0
+    for dname, X, y in data_sets(quick):
+        X = np.asarray(X, float)
+        classes, y_index = np.unique(np.asarray(y), return_inverse=True)
+        k = len(classes)
+        for seed in seeds:
+            rng = np.random.default_rng(seed)
+            idx = rng.permutation(len(y_index))
+            n_fit = min(len(idx) // 3, 600)
+            fit_rows, rest = idx[:n_fit], idx[n_fit:]
+            n_test = min(len(rest) // 2, 1500)
+            test_rows, pool = rest[:n_test], rest[n_test:]
+            if len(np.unique(y_index[fit_rows])) != k:
+                continue
+            for mname, model in base_models(quick, seed):
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore")
+                    model.fit(X[fit_rows], y_index[fit_rows])
+                if mname == "svm_margins":
+                    # a margin model has no predict_proba: calibrate it on the fit rows first
+                    model = CalibrationWrapper(FrozenEstimator(model), method="platt").fit(
+                        X[fit_rows], y_index[fit_rows])
+                frozen = FrozenEstimator(model)
+                Xt, yt = X[test_rows], y_index[test_rows]
+                base_t = model.predict_proba(Xt)
+                for draw, cal in draws(y_index, pool, k, rng):
+                    n_draws += 1
+                    where = f"{dname}|{mname}|seed{seed}|{draw}"
+                    Xc, yc = X[cal].copy(), y_index[cal].copy()
+                    Xc0, yc0 = Xc.copy(), yc.copy()
+                    sweep_calibration(frozen, Xc, yc, Xt, yt, base_t, k, where, rng, quick)
+                    sweep_prior(frozen, Xc, yc, Xt, yt, base_t, k, where, rng)
+                    sweep_cost(frozen, Xc, yc, k, where, rng)
+                    sweep_array_core(model.predict_proba(Xc), yc, k, where, rng)
+                    if not (np.array_equal(Xc, Xc0) and np.array_equal(yc, yc0)):
+                        note("wrappers", "inplace", where)
+                print(f"{dname} {mname} seed {seed} done", flush=True)
+    kinds = ["crash", "nonfinite", "exact0/1", "rowsum", "inplace", "wscale", "freq", "harm"]
+    print(f"\n{n_draws} calibration draws\n")
+    width = max(len(c) for c in components) + 2
+    print("component".ljust(width) + "".join(k.rjust(10) for k in kinds))
+    for comp in sorted(components):
+        row = [problems.get((comp, kind), 0) for kind in kinds]
+        cells = "".join((str(c) if c else "-").rjust(10) for c in row)
+        print(comp.ljust(width) + cells + ("" if any(row) else "   none"))
+    print(f"\ntotal problems: {sum(problems.values()) or 'none'}")
+    for (comp, kind), ex in sorted(examples.items()):
+        print(f"  {comp} {kind}: {ex}")
+
+
+if __name__ == "__main__":
+    main(sys.argv[1:])
