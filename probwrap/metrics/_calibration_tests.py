@@ -22,7 +22,13 @@ from scipy import optimize, stats
 
 from .._validation import plain
 from ._calibration import _bin_edges, _bin_index, _top_label
-from ._inputs import check_n_bins, check_strategy, prepare_any, prepare_binary
+from ._inputs import (
+    check_n_bins,
+    check_strategy,
+    count_scale_weights,
+    prepare_any,
+    prepare_binary,
+)
 
 __all__ = [
     "HosmerLemeshowResult",
@@ -114,7 +120,9 @@ def hosmer_lemeshow_test(
         Where the forecasts came from; sets the degrees of freedom (see above).
     sample_weight : array-like of shape (n,), optional
         Row frequencies: weight 2 counts a row twice (and so changes the p-value as a copied row
-        would).
+        would). Weights summing to less than the number of rows cannot be frequencies; they
+        are rescaled to Kish's effective sample size with a ``WeightScaleWarning``, so the
+        p-value does not depend on the scale of the weights.
     labels : array-like of shape (2,), optional
         ``[negative, positive]``.
 
@@ -143,6 +151,7 @@ def hosmer_lemeshow_test(
     if setting not in _SETTINGS:
         raise ValueError(f"`setting` must be one of {list(_SETTINGS)}; got {plain(setting)!r}.")
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
+    w = count_scale_weights(w, "hosmer_lemeshow_test")
     edges = _bin_edges(p, w, n_groups, "quantile")
     idx = _bin_index(p, edges)
     weight = np.bincount(idx, weights=w, minlength=n_groups)
@@ -224,7 +233,9 @@ def spiegelhalter_z_test(
     y_prob : array-like of shape (n,)
         Positive-class probabilities (two-column input uses the second column).
     sample_weight : array-like of shape (n,), optional
-        Row frequencies: weight 2 counts a row twice.
+        Row frequencies: weight 2 counts a row twice. Weights summing to less than the number
+        of rows cannot be frequencies; they are rescaled to Kish's effective sample size with a
+        ``WeightScaleWarning``, so ``Z`` does not depend on the scale of the weights.
     labels : array-like of shape (2,), optional
         ``[negative, positive]``.
 
@@ -245,6 +256,7 @@ def spiegelhalter_z_test(
     (-0.7926, 0.428)
     """
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
+    w = count_scale_weights(w, "spiegelhalter_z_test")
     total = w.sum()
     variance = float(np.dot(w, (1.0 - 2.0 * p) ** 2 * p * (1.0 - p)))
     if variance <= 0:
@@ -430,7 +442,9 @@ def debiased_calibration_error(
     sample_weight : array-like of shape (n,), optional
         Row frequencies: ``W_b`` counts rows, so weight 2 counts a row twice. Bins with total
         weight of at most 1 cannot estimate their variance; they keep their plug-in term and a
-        ``UserWarning`` says so.
+        ``UserWarning`` says so Weights summing to less than the number of rows cannot be
+        frequencies; they are first rescaled to Kish's effective sample size (with a
+        ``WeightScaleWarning``), so the result does not depend on the scale of the weights.
 
     Returns
     -------
@@ -449,6 +463,7 @@ def debiased_calibration_error(
     if not isinstance(squared, (bool, np.bool_)):
         raise ValueError(f"`squared` must be True or False; got {plain(squared)!r}.")
     outcome, values, w = _outcome_and_forecast(y_true, y_prob, sample_weight, labels)
+    w = count_scale_weights(w, "debiased_calibration_error")
     edges = _bin_edges(values, w, n_bins, strategy)
     idx = _bin_index(values, edges)
     weight = np.bincount(idx, weights=w, minlength=n_bins)

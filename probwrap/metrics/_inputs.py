@@ -23,6 +23,7 @@ from .._validation import (
     check_sample_weight,
     plain,
 )
+from ..calibration._base import WeightScaleWarning, count_weights
 
 __all__ = [
     "STRATEGIES",
@@ -185,3 +186,24 @@ def warn_floored(n_floored: int, floor: float, what: str) -> None:
             UserWarning,
             stacklevel=3,
         )
+
+
+def count_scale_weights(w: np.ndarray, what: str) -> np.ndarray:
+    """Weights on the row-count scale for a statistic whose null distribution counts rows.
+
+    Weights are row frequencies and kept as given when they sum to at least the number of rows
+    of positive weight. Weights that sum to less (normalised to sum 1, or frequencies scaled by
+    1e-3) cannot be frequencies; they are rescaled to sum to Kish's (1965) effective sample size
+    ``(sum w)**2 / sum w**2``, with a :class:`~probwrap.calibration.WeightScaleWarning`, so that
+    the p-value does not depend on the scale of the weights.
+    """
+    out, rescaled = count_weights(w)
+    if rescaled:
+        warnings.warn(
+            f"{what}: `sample_weight` sums to less than the number of rows, so it cannot be row "
+            "frequencies; it was rescaled to sum to Kish's effective sample size "
+            f"({out.sum():.4g}).",
+            WeightScaleWarning,
+            stacklevel=3,
+        )
+    return out
