@@ -24,6 +24,7 @@ from ._validation import plain
 from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
 from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
+from .calibration._identity import IdentityMap
 from .calibration._isotonic import IsotonicMap
 from .calibration._logodds import DEFAULT_CLIP
 from .calibration._platt import PlattMap
@@ -43,6 +44,7 @@ CALIBRATION_METHODS: dict[str, type[CalibrationMap]] = {
     "venn_abers": VennAbersMap,
     "vector_scaling": VectorScalingMap,
     "matrix_scaling": MatrixScalingMap,
+    "identity": IdentityMap,
 }
 
 #: Candidates of ``method="auto"`` that compete only for multiclass models: on binary log-odds
@@ -50,8 +52,11 @@ CALIBRATION_METHODS: dict[str, type[CalibrationMap]] = {
 _AUTO_MULTICLASS_ONLY = ("vector_scaling",)
 
 #: Methods that ``method="auto"`` leaves out unless named in ``candidates``: matrix scaling has
-#: k^2 + k - 1 parameters and needs many rows per class.
-_AUTO_EXCLUDED_BY_DEFAULT = ("matrix_scaling",)
+#: k^2 + k - 1 parameters and needs many rows per class; the identity (the model's own
+#: probabilities), as the simplest candidate of the one-standard-error rule, was kept on too
+#: many small sets where a map was better (benchmarks/calibration.py: geometric mean 0.972 ->
+#: 0.981, cells above 1.10 four -> ten).
+_AUTO_EXCLUDED_BY_DEFAULT = ("matrix_scaling", "identity")
 
 #: ``method="auto"`` keeps Venn-Abers among its default candidates only while the number of
 #: held-out rows times the number of binary maps (1, or k one-vs-rest) stays below this.
@@ -112,8 +117,10 @@ class CalibrationWrapper(HeldOutClassifierBase):
     method : str or CalibrationMap, default="auto"
         ``"platt"``, ``"isotonic"``, ``"beta"``, ``"temperature"``, ``"binning"``,
         ``"venn_abers"``, ``"vector_scaling"``, ``"matrix_scaling"`` (the last two multiclass
-        maps, see :class:`~probwrap.calibration.VectorScalingMap`), a map instance (cloned
-        before fitting), or ``"auto"``. ``"auto"`` scores
+        maps, see :class:`~probwrap.calibration.VectorScalingMap`), ``"identity"`` (the model's
+        own probabilities with the output floor of temperature scaling, see
+        :class:`~probwrap.calibration.IdentityMap`), a map instance (cloned before fitting), or
+        ``"auto"``. ``"auto"`` scores
         every candidate map by cross-validated log loss on the held-out predictions and keeps the
         simplest map whose loss is within one standard error (of the paired per-row difference)
         of the best one, so a richer map must win by more than its cross-validation noise. A
@@ -130,7 +137,9 @@ class CalibrationWrapper(HeldOutClassifierBase):
         Shuffling of the folds.
     candidates : sequence of str, default=None
         Maps that ``"auto"`` chooses from. Default: all methods except matrix scaling (which
-        needs many rows per class), with vector scaling for multiclass models only (on binary
+        needs many rows per class) and the identity (listed, it is scored only for
+        ``predict_proba`` output, and as the candidate with no parameters it wins every close
+        race of the one-standard-error rule), with vector scaling for multiclass models only (on binary
         log-odds it is Platt scaling); Venn–Abers is a
         candidate only while the held-out rows times the number of binary maps (1 for two
         classes, k one-vs-rest) stay below 1,000: it costs one to two orders of magnitude more
@@ -511,6 +520,9 @@ class CalibrationWrapper(HeldOutClassifierBase):
             names = [n for n in names if n not in _AUTO_EXCLUDED_BY_DEFAULT]
             if n_maps == 1:  # binary
                 names = [n for n in names if n not in _AUTO_MULTICLASS_ONLY]
+        if getattr(self, "response_", "predict_proba") == "decision_function":
+            # decision values are not probabilities: there are none of the model's own to keep
+            names = [n for n in names if n != "identity"] or names
         if self.candidates is None and n_rows * n_maps >= _VENN_ABERS_AUTO_MAX_ROWS:
             # Venn-Abers costs one to two orders of magnitude more to cross-validate than the
             # other maps (one hull-bridging search per insertion point and label, per class

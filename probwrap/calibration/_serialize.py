@@ -46,6 +46,7 @@ from .._validation import plain
 from ._base import CalibrationMap
 from ._beta import BetaMap
 from ._binning import BinningMap
+from ._identity import IdentityMap
 from ._isotonic import IsotonicMap
 from ._platt import PlattMap
 from ._temperature import TemperatureMap, _valid_shrinkage
@@ -134,6 +135,7 @@ _SPECS: dict[str, tuple[type[CalibrationMap], tuple[str, ...], dict[str, str]]] 
         ("shrinkage", "smooth_targets"),
         {"coef_": "matrix", "intercepts_": "array"},
     ),
+    "identity": (IdentityMap, (), {"floor_": "floor"}),
 }
 
 #: the method names, as accepted by ``CalibrationWrapper(method=...)``
