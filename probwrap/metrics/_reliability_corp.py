@@ -117,7 +117,11 @@ def _mean_brier(q: np.ndarray, y: np.ndarray, w: np.ndarray) -> float:
 
 
 def _mean_log_loss(q: np.ndarray, y: np.ndarray, w: np.ndarray) -> float:
-    # xlogy: 0 * log 0 = 0, so a recalibrated 0 or 1 costs nothing where it is right
+    # xlogy: 0 * log 0 = 0, so a recalibrated 0 or 1 costs nothing where it is right. Rows of
+    # weight 0 are absent rows: left in, a recalibrated 0 or 1 against their label would give
+    # 0 * inf = nan
+    keep = w > 0
+    q, y, w = q[keep], y[keep], w[keep]
     return float(-np.dot(w, xlogy(y, q) + xlogy(1.0 - y, 1.0 - q)) / w.sum())
 
 
