@@ -26,8 +26,9 @@ On every draw the wrappers and the array-core functions are run and these proble
 Printed: a table of problem counts by kind and component ("none" where none), then the
 first problems with their draw.
 
-Run: ``nice python benchmarks/small_data_sweep.py`` (minutes) or ``--quick`` (iris, wine,
-breast cancer; naive Bayes and forest; one seed; about a minute).
+Run: ``nice python benchmarks/small_data_sweep.py`` (three seeds; tens of minutes on a busy
+machine), ``--seeds 1``, or ``--quick`` (iris, wine, breast cancer; naive Bayes and forest;
+one seed; about a minute).
 """
 
 from __future__ import annotations
@@ -70,7 +71,9 @@ components: set = set()
 
 def note(component: str, kind: str, where: str, detail: str = "") -> None:
     problems[(component, kind)] += 1
-    examples.setdefault((component, kind), f"{where}: {detail}"[:300])
+    if (component, kind) not in examples:
+        examples[(component, kind)] = f"{where}: {detail}"[:300]
+        print(f"  first {kind} in {component}: {examples[(component, kind)]}", flush=True)
 
 
 def run(component: str, where: str, fn, *args, **kwargs):
@@ -356,7 +359,8 @@ def sweep_array_core(p, y, k, where, rng):
 # --------------------------------------------------------------------------- main
 def main(argv: list[str]) -> None:
     quick = "--quick" in argv
-    seeds = range(1) if quick else range(3)
+    n_seeds = int(argv[argv.index("--seeds") + 1]) if "--seeds" in argv else (1 if quick else 3)
+    seeds = range(n_seeds)
     n_draws = 0
     for dname, X, y in data_sets(quick):
         X = np.asarray(X, float)
