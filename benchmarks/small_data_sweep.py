@@ -19,7 +19,8 @@ On every draw the wrappers and the array-core functions are run and these proble
 * ``inplace``: ``X``, ``y`` or ``sample_weight`` modified by a call;
 * ``wscale``: a choice (auto's method, the tuned cutoff / offsets, the adapted prior, an array
   metric) that changes when all weights are normalised to sum 1 or scaled by 1e-3;
-* ``freq``: integer frequency weights giving a different array-core result than duplicated rows;
+* ``freq``: integer frequency weights giving a different array-core result than duplicated rows,
+  or weight 0 a different result than dropping the row;
 * ``harm``: test log loss above 1.10 x the base model's (probabilities clipped at 1e-15), on
   test sets of at least 200 rows (smaller test sets are noise).
 
@@ -318,6 +319,17 @@ def sweep_array_core(p, y, k, where, rng):
         d = summary(run(comp, where, fn, y[dup], y_prob[dup]))
         if not same(fw, d):
             note(comp, "freq", where, f"weights {fw} vs duplicated {d}")
+        # weight 0 means an absent row: the same as dropping it
+        z = np.ones(len(y))
+        z[::3] = 0.0
+        kept = z > 0
+        if len(np.unique(y[kept])) == len(np.unique(y)):
+            fz = summary(run(comp, where, fn, y, y_prob, sample_weight=z))
+            dz = summary(run(comp, where, fn, y[kept], y_prob[kept]))
+            if fz is not None and not np.all(np.isfinite(fz)):
+                note(comp, "nonfinite", where, f"zero weights: {fz}")
+            elif not same(fz, dz):
+                note(comp, "freq", where, f"zero weights {fz} vs dropped rows {dz}")
         run(comp, where, fn, y, y_prob.copy())
     costs = decision.zero_one_costs(k) * (1 + np.arange(k))[:, None]
     comp = "decision.bayes_actions"
