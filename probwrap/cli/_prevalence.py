@@ -60,6 +60,17 @@ def _two_columns(p: np.ndarray) -> np.ndarray:
     return np.column_stack([1.0 - p, p])
 
 
+def _warn_per_resample(caught: list, n_resamples: int) -> None:
+    """Each distinct warning of the bootstrap fits once, with how many resamples raised it."""
+    counts: dict[tuple[type, str], int] = {}
+    for w in caught:
+        key = (w.category, str(w.message))
+        counts[key] = counts.get(key, 0) + 1
+    for (category, message), count in counts.items():
+        warnings.warn(f"in {count} of {n_resamples} bootstrap resamples: {message}", category,
+                      stacklevel=3)
+
+
 def prevalence_from_source(
     proba: np.ndarray,
     source_prevalence: float,
@@ -102,11 +113,12 @@ def prevalence_from_source(
         n = proba.shape[0]
         draws = np.empty(n_resamples)
         init = point.prior if np.all(point.prior > 0) else None
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
             for b in progress(range(n_resamples), desc="bootstrap", total=n_resamples):
                 counts = np.bincount(rng.randint(0, n, size=n), minlength=n).astype(float)
                 draws[b] = em_prior(p2, src, sample_weight=counts, init=init).prior[1]
+        _warn_per_resample(caught, n_resamples)
         alpha = 1.0 - confidence_level
         lo, hi = np.quantile(draws, [alpha / 2, 1 - alpha / 2])
         cp = binomial_interval(point.prior[1], float(n), confidence_level)

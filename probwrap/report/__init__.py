@@ -73,7 +73,8 @@ def write_report(
     A "recommendation" box at the top names the rule to use now, why, and its cost and share
     acted on, within the capacity at the estimated prevalence (see ``Recommendation``); warnings
     met while computing a number are shown in a "notes" box beside it (``content.notes``) and
-    warned once more with the number named.
+    warned once more with the number named; those met while drawing a figure, in a box under
+    that figure (note keys ``"figure:<name>"``).
 
     Sections: calibration (Brier score, log loss, expected calibration error (bias-corrected,
     basic bootstrap interval), calibration slope and intercept, each with a bootstrap interval;

@@ -12,6 +12,7 @@ from ..plot import (
     ReliabilityDiagram,
 )
 from ._alarm_chart import alarm_svg
+from ._common import draw_figure, figure_notes
 from ._content import BAYES_NAME, HALF_NAME, ReportContent
 from ._general_html import general_figures, general_glance, general_sections
 from ._groups_html import group_section
@@ -134,6 +135,7 @@ def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
         "fig-reliability", figures["reliability"],
         f"Reliability diagram: observed frequency against mean forecast in {c.n_bins} "
         f"equal-width bins, with {level} Wilson (1927) intervals; rows per bin below.",
+        figure_notes(c, "reliability"),
     ))
     parts.append("</section>")
     return "".join(parts)
@@ -228,11 +230,13 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
             "fig-cost", figures["cost"],
             f"Mean cost per row at every cutoff, with the {c.chosen_name}, its bootstrap "
             f"interval, the {BAYES_NAME} and the {HALF_NAME}.",
+            figure_notes(c, "cost"),
         ))
     parts.append(_figure(
         "fig-decision-curve", figures["decision_curve"],
         "Decision curve: net benefit TP/n \u2212 FP/n \u00b7 t/(1\u2212t) against threshold "
         "probability t (Vickers & Elkin 2006), with the act-on-all and act-on-none references.",
+        figure_notes(c, "decision_curve"),
     ))
     parts.append("</section>")
     return "".join(parts)
@@ -289,6 +293,7 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
                 "fig-prevalence", figures["prevalence"],
                 "Estimated prevalence per batch of unlabelled rows with bootstrap intervals, "
                 "against the source prevalence; circled batches fail the shift test.",
+                figure_notes(c, "prevalence"),
             ))
         if getattr(c, "alarm", None) is not None:
             parts.append(_alarm_text(c))
@@ -299,6 +304,7 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
                     f"against the source prevalence (k = {c.alarm.result.reference:g}); an "
                     "alarm fires when a sum crosses the dashed decision interval "
                     f"h = {c.alarm.result.decision_interval:g} and both sums restart.",
+                    figure_notes(c, "alarm"),
                 ))
     parts.append("</section>")
     return "".join(parts)
@@ -365,7 +371,8 @@ def make_figures(c: Any) -> dict[str, str]:
     of :mod:`probwrap.plot`; without it, from the built-in SVG renderer, so that a plain
     ``pip install .`` still writes a report with its figures (the multiclass report then shows
     its reliability diagram and tables; the action-share and class-share charts need
-    matplotlib).
+    matplotlib). Warnings met while drawing a figure are added to ``c.notes`` under
+    ``"figure:<key>"`` and shown under that figure (:func:`._common.draw_figure`).
     """
     try:
         import matplotlib  # noqa: F401
@@ -376,12 +383,15 @@ def make_figures(c: Any) -> dict[str, str]:
     if getattr(c, "kind", "binary") == "general":
         return general_figures(c)
     figs: dict[str, str] = {}
-    rel = ReliabilityDiagram.from_predictions(
-        c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
-        confidence_level=c.confidence_level, pos_label=1.0,
-    )
-    figs["reliability"] = figure_to_svg(rel.figure_, "rel")
-    if c.cost_matrix is not None:
+
+    def reliability() -> str:
+        rel = ReliabilityDiagram.from_predictions(
+            c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
+            confidence_level=c.confidence_level, pos_label=1.0,
+        )
+        return figure_to_svg(rel.figure_, "rel")
+
+    def cost() -> str:
         disp = CostCurveDisplay(
             result=c.cost_curve, plugin_cutoff=c.plugin, interval=c.cost_interval
         ).plot()
@@ -390,23 +400,33 @@ def make_figures(c: Any) -> dict[str, str]:
         # the legend names the cutoff as the table and the text do
         disp.chosen_line_.set_label(f"{c.chosen_name} {c.chosen_cutoff:.3f}")
         disp.ax_.legend(fontsize=7, frameon=False, loc="best")
-        figs["cost"] = figure_to_svg(disp.figure_, "cost")
-    dc = DecisionCurveDisplay.from_predictions(
-        c.y_true, c.y_prob, sample_weight=c.sample_weight, pos_label=1.0,
-        marked_threshold=c.chosen_cutoff,
-    )
-    if dc.marked_line_ is not None:
-        dc.marked_line_.set_label(f"{c.chosen_name} {c.chosen_cutoff:.3f}")
-        dc.ax_.legend(fontsize=7, frameon=False, loc="upper right")
-    figs["decision_curve"] = figure_to_svg(dc.figure_, "dc")
-    if c.batch_table is not None:
+        return figure_to_svg(disp.figure_, "cost")
+
+    def decision_curve() -> str:
+        dc = DecisionCurveDisplay.from_predictions(
+            c.y_true, c.y_prob, sample_weight=c.sample_weight, pos_label=1.0,
+            marked_threshold=c.chosen_cutoff,
+        )
+        if dc.marked_line_ is not None:
+            dc.marked_line_.set_label(f"{c.chosen_name} {c.chosen_cutoff:.3f}")
+            dc.ax_.legend(fontsize=7, frameon=False, loc="upper right")
+        return figure_to_svg(dc.figure_, "dc")
+
+    def prevalence() -> str:
         pd_ = PrevalenceDriftDisplay.from_table(
             c.batch_table, source_prevalence=c.source_prevalence
         )
-        figs["prevalence"] = figure_to_svg(pd_.figure_, "prev")
+        return figure_to_svg(pd_.figure_, "prev")
+
+    draw_figure(c, figs, "reliability", reliability)
+    if c.cost_matrix is not None:
+        draw_figure(c, figs, "cost", cost)
+    draw_figure(c, figs, "decision_curve", decision_curve)
+    if c.batch_table is not None:
+        draw_figure(c, figs, "prevalence", prevalence)
     if getattr(c, "alarm", None) is not None:
         # the CUSUM chart is drawn by the built-in renderer in both cases (no display object)
-        figs["alarm"] = alarm_svg(c.alarm, key="alarm")
+        draw_figure(c, figs, "alarm", alarm_svg, c.alarm, key="alarm")
     return figs
 
 
