@@ -79,6 +79,7 @@ class MulticlassReportContent:
     prior_method: str = "em"
     confidence_level: float = 0.95
     notes: list[ReportNote] = field(default_factory=list)
+    late_labels: Any = None
     recommendation: Recommendation | None = None
 
     # the binary report's names, so that shared code (glance, demo summary) can read either

@@ -18,6 +18,7 @@ from ._html_parts import (
     metric_rows_html,
     notes_box,
 )
+from ._promises import late_label_html
 
 __all__ = ["general_figures", "general_sections", "general_glance"]
 
@@ -83,6 +84,7 @@ def _calibration(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         "averages the one-vs-rest binned error of every class (Kull et al. 2019).</p>",
         ece_note(c),
         notes_box([n for n in c.notes if n.key.startswith("metric:")], "notes-calibration"),
+        late_label_html(c),
     ]
     if c.calibration_method is not None:
         parts.append(f"<p>Calibration map in use: <b>{_text(c.calibration_method)}</b>.</p>")

@@ -27,6 +27,7 @@ from ._html_parts import (
     notes_box,
     recommendation_box,
 )
+from ._promises import guarantee_html, late_label_html
 
 __all__ = ["render_html", "figure_to_svg", "CAUTIONS"]
 
@@ -116,6 +117,7 @@ def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
         f"<tbody>{rows}</tbody></table>",
         ece_note(c),
         notes_box([n for n in c.notes if n.key.startswith("metric:")], "notes-calibration"),
+        late_label_html(c),
     ]
     if c.calibration_method is not None:
         parts.append(
@@ -209,10 +211,14 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
             if target:
                 cells += [_share(r.target_flagged_share), _num(r.target_expected_cost)]
             body.append(f'<tr data-rule="{r.key}"{cls}>{"".join(cells)}</tr>')
+        n_columns = (4 + (c.capacity is not None) + 2 * bool(target))
+        unreachable_row, guarantee_text = guarantee_html(c, n_columns)
+        body.insert(1, unreachable_row)
         parts.append(
             f'<table id="rule-comparison"><thead>{head}</thead><tbody>{"".join(body)}'
             "</tbody></table>"
         )
+        parts.append(guarantee_text)
         parts.append(
             '<p class="pw-note">Mean cost per row is the realised cost on the labelled rows of '
             "this report. A cutoff searched on these same rows is optimistic there; prefer "
@@ -224,7 +230,8 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
             + "</p>"
         )
         parts.append(notes_box(
-            [n for n in c.notes if n.key in ("plugin", "cutoff", "capacity")],
+            [n for n in c.notes if n.key in ("plugin", "cutoff", "capacity")
+             or (n.key == "guarantee" and n.kind != "not computed")],  # said above
             "notes-decisions"))
         parts.append(_figure(
             "fig-cost", figures["cost"],
