@@ -23,6 +23,7 @@ from .decision import (
     cutoff_interval,
     expected_costs,
     fit_action_budget,
+    guaranteed_class_offsets,
     guaranteed_cutoff,
     plugin_cutoff,
     search_cutoff,
@@ -116,6 +117,9 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         ``"high_probability"``). The least-cost cutoff is then searched among the cutoffs
         certified on the held-out predictions; if none can be certified, :meth:`fit` raises
         :class:`~probwrap.decision.GuaranteeUnreachableError` (never an unconstrained rule).
+        More than two classes or actions: per-class recall floors,
+        ``{"recall_floors": {label: floor}, "confidence": 0.9}`` (see
+        :func:`probwrap.decision.guaranteed_class_offsets`; no ``capacity`` then).
     tally_resolution : float, default=1e-3
         Bin width on the log-odds scale of the score tallies that the predictions are reduced
         to: for Dask input always (see :mod:`probwrap.scale`); for in-memory input only to
@@ -153,9 +157,9 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     heldout_cost_ : float or None
         Mean cost per row of the fitted policy on the held-out predictions (None when the
         strategy needed none: ``"bayes"`` / ``"fixed"`` without a capacity and not frozen).
-    guarantee_ : GuaranteedCutoff or None
-        With ``guarantee``: the certified cutoffs, the achieved value of the requirement on the
-        held-out rows, its guaranteed bound and p-value.
+    guarantee_ : GuaranteedCutoff, GuaranteedOffsets or None
+        With ``guarantee``: the certified rules, the achieved value of the requirement on the
+        held-out rows, its guaranteed bound and p-value (per floored class for recall floors).
     cutoff_interval_ : CutoffInterval or None
         ``"tuned"`` binary cutoff: bootstrap interval of the cutoff and its spread across folds,
         computed on first access. None otherwise.
@@ -245,13 +249,18 @@ class CostPolicyWrapper(HeldOutClassifierBase):
     def _guarantee_args(self) -> dict[str, Any]:
         g = self.guarantee
         allowed = {"requirement", "target", "confidence", "method"}
-        if not isinstance(g, Mapping) or not {"requirement", "target"} <= set(g) or (
-            set(g) - allowed
-        ):
+        floors_form = isinstance(g, Mapping) and set(g) - {"confidence", "method"} == {
+            "recall_floors"
+        }
+        requirement_form = (
+            isinstance(g, Mapping) and {"requirement", "target"} <= set(g) and set(g) <= allowed
+        )
+        if not (floors_form or requirement_form):
             raise ValueError(
                 "`guarantee` must be a dict with keys 'requirement' and 'target' (and optionally "
-                f"'confidence', 'method'), e.g. {{'requirement': 'recall', 'target': 0.9}}; got "
-                f"{plain(g)!r}."
+                f"'confidence', 'method'), e.g. {{'requirement': 'recall', 'target': 0.9}}, or "
+                "with more than two classes {'recall_floors': {label: floor}} (and optionally "
+                f"'confidence', 'method'); got {plain(g)!r}."
             )
         if self.strategy != "tuned" or self.costs is None or callable(self.costs):
             raise ValueError(
@@ -368,11 +377,25 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         self._interval_cache = None
 
         proba = None if ho is None else self._check_heldout_proba(ho.values, k)
-        if self.guarantee is not None and not self._cutoff_mode:
-            raise ValueError(
-                "`guarantee` applies to a binary cutoff (two classes, two actions, constant "
-                f"costs); here there are {k} classes and {n_actions} actions."
-            )
+        if self.guarantee is not None:
+            floors_form = "recall_floors" in self.guarantee
+            if self._cutoff_mode and floors_form:
+                raise ValueError(
+                    "`guarantee` with two classes and two actions takes a requirement on the "
+                    "cutoff, e.g. {'requirement': 'recall', 'target': 0.9}; 'recall_floors' is "
+                    "for more classes or actions."
+                )
+            if not self._cutoff_mode and not floors_form:
+                raise ValueError(
+                    "`guarantee` with a requirement applies to a binary cutoff (two classes, two "
+                    f"actions, constant costs); here there are {k} classes and {n_actions} "
+                    "actions: give per-class recall floors, {'recall_floors': {label: floor}}."
+                )
+            if not self._cutoff_mode and (row_costs is not None or budget_share is not None):
+                raise ValueError(
+                    "`guarantee` with recall floors needs one cost matrix and no `capacity` (a "
+                    "capacity limit would change the certified rules)."
+                )
         if self._cutoff_mode:
             self._fit_cutoff(ho, proba, matrix, budget_share)
         else:
@@ -554,6 +577,29 @@ class CostPolicyWrapper(HeldOutClassifierBase):
                     f"`cutoff` must be finite per-class offsets of shape ({k},); got "
                     f"{plain(self.cutoff)!r}."
                 )
+        elif self.guarantee is not None:
+            args = self._guarantee_args()
+            floors = args.pop("recall_floors")
+            if not isinstance(floors, Mapping):
+                raise ValueError(
+                    "`guarantee['recall_floors']` must be a dict {class label: floor}; got "
+                    f"{plain(floors)!r}."
+                )
+            index = {}
+            for label, floor in floors.items():
+                hit = np.flatnonzero(self.classes_ == label)
+                if hit.shape[0] != 1:
+                    raise ValueError(
+                        f"`guarantee['recall_floors']` names {plain(label)!r}, which is not among "
+                        f"the classes {self.classes_.tolist()}."
+                    )
+                index[int(hit[0])] = floor
+            g = guaranteed_class_offsets(
+                proba, ho.y_index, costs, recall_floors=index,
+                sample_weight=ho.sample_weight, **args,
+            )
+            self.guarantee_ = g
+            offsets = g.offsets
         elif self.strategy == "tuned" and self.costs is not None:
             res = tune_class_offsets(proba, ho.y_index, costs, sample_weight=ho.sample_weight)
             offsets = res.offsets

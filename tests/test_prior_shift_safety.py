@@ -296,6 +296,64 @@ def test_dropped_resamples_are_counted_and_reported():
     assert 4 <= res.n_dropped <= 25
 
 
+
+def test_every_resample_dropped_gives_the_whole_range_and_says_so():
+    # One labelled row of class 1: a Poisson(1) resample loses it with probability e^-1, so
+    # with 3 resamples some seed among the first 200 drops it in all three. Then the interval
+    # is [0, 1] for every class, and two warnings say how many were dropped and why.
+    rng = np.random.default_rng(8)
+    p_src, y_src = binary_gaussian(200, 0.5, rng)
+    y_src[:] = 0
+    y_src[0] = 1
+    p_new, _ = binary_gaussian(200, 0.5, rng)
+    for seed in range(200):
+        est = PriorEstimator(n_resamples=3, random_state=seed, interval="percentile")
+        est.fit(p_src, y_src)
+        with warnings.catch_warnings(record=True) as rec:
+            warnings.simplefilter("always")
+            res = est.estimate(p_new)
+        if res.n_dropped == 3:
+            break
+    else:  # pragma: no cover - P(no seed of 200 drops all three) = (1 - e^-3)^200 < 1e-4
+        pytest.fail("no seed dropped every resample")
+    messages = " ".join(str(r.message) for r in rec)
+    assert "3 of 3 bootstrap resamples were dropped" in messages
+    assert "Every bootstrap resample was dropped" in messages
+    np.testing.assert_array_equal(res.interval, [[0, 1], [0, 1]])
+
+
+def test_wrapper_reports_dropped_resamples():
+    rng = np.random.default_rng(8)
+    p_src, y_src = binary_gaussian(300, 0.5, rng)
+    y_src[:] = 0
+    y_src[:2] = 1
+    p_new, _ = binary_gaussian(300, 0.5, rng)
+    X = np.log(p_src[:, 1:] / p_src[:, :1])
+    X_new = np.log(p_new[:, 1:] / p_new[:, :1])
+    model = PriorShiftWrapper(FrozenEstimator(LogisticRegression().fit(X, (X[:, 0] > 0))),
+                              interval="bca", n_resamples=100, random_state=0).fit(X, y_src)
+    with pytest.warns(UserWarning, match="bootstrap resamples were dropped"):
+        model.adapt(X_new)
+    assert model.n_dropped_resamples_ == model.prior_estimate_.n_dropped
+    # P(both Poisson(1) draws are 0) = exp(-2) = 0.135: expect about 13.5 of 100
+    assert 4 <= model.n_dropped_resamples_ <= 25
+
+
+def test_boundary_warning_blames_few_rows_when_the_model_separates_well():
+    # A strong model (classes 4 standard deviations apart), source prevalence 50 %, and 30
+    # unlabelled rows all of class 1: each row is worth about a labelled row (its score is
+    # about +-2 at the source prior, information 4 against 1 / (0.5 * 0.5) = 4 for a labelled
+    # row), so the maximum-likelihood share of 1 is put down to the few rows, not to weak
+    # separation.
+    rng = np.random.default_rng(12)
+    p_src, y_src = binary_gaussian(2000, 0.5, rng, sep=4.0)
+    p_new, _ = binary_gaussian(30, 1.0, rng, sep=4.0)
+    est = PriorEstimator(n_resamples=0).fit(p_src, y_src)
+    with pytest.warns(BoundaryPriorWarning, match="there are few rows"):
+        res = est.estimate(p_new)
+    assert res.ml_prior[1] >= 1 - 1e-3 * (1 - est.source_prior_[1])
+    assert res.prior[1] < res.ml_prior[1]  # the reported (MAP) prior is shrunk off the edge
+
 # -- degenerate estimators ---------------------------------------------------------------------
 @pytest.mark.parametrize("method", ["acc", "pacc", "bbse", "bbse_soft"])
 def test_degenerate_confusion_matrix_warns_and_does_not_pretend(method, weak_model):

@@ -147,3 +147,38 @@ def test_multiclass_dask_one_vs_rest_with_an_absent_class(client, model):
     assert local.calibrator_[2] == pytest.approx(remote.calibrator_[2], rel=1e-12)
     p = remote.predict_proba(X)
     assert p.min() > 0 and p.max() < 1
+
+
+def test_multiclass_dask_uses_the_same_harm_cutoff_as_in_memory(client):
+    # A weak three-class model with a small class: the max_harm rule raises the evidence cutoff
+    # above min_evidence, on Dask input as in memory. Consistency test against the in-memory
+    # wrapper on the same rows (same sums, so agreement to rounding; 1e-6 relative allows for
+    # the order of the block sums and the EM / Newton tolerances).
+    rng = np.random.default_rng(5)
+
+    def draw(n, prior):
+        y = rng.choice(3, size=n, p=prior)
+        X = np.array([[0.0, 0.0], [0.5, 0.1], [0.1, 0.5]])[y] + rng.normal(size=(n, 2))
+        return X, y
+
+    X_tr, y_tr = draw(20_000, [0.6, 0.37, 0.03])
+    weak = FrozenEstimator(LogisticRegression().fit(X_tr, y_tr))
+    X, y = draw(3000, [0.6, 0.37, 0.03])
+    X_new, _ = draw(3000, [0.6, 0.35, 0.05])
+    kw = dict(n_resamples=0)
+    remote = PriorShiftWrapper(weak, **kw).fit(
+        da.from_array(X, chunks=(1000, 2)), da.from_array(y, chunks=1000)
+    ).adapt(da.from_array(X_new, chunks=(1000, 2)))
+    local = PriorShiftWrapper(weak, **kw).fit(X, y).adapt(X_new)
+    assert local.evidence_cutoff_ > 1.5  # the harm bound is what sets the cutoff here
+    assert remote.prior_estimate_.null_harm_scale == pytest.approx(
+        local.prior_estimate_.null_harm_scale, rel=1e-6
+    )
+    assert remote.evidence_cutoff_ == pytest.approx(local.evidence_cutoff_, rel=1e-6)
+    assert remote.adaptation_weight_ == pytest.approx(local.adaptation_weight_, abs=1e-6)
+    np.testing.assert_allclose(remote.applied_prior_, local.applied_prior_, atol=1e-6)
+    # and max_harm=None falls back to min_evidence on both paths
+    plain = PriorShiftWrapper(weak, max_harm=None, **kw).fit(
+        da.from_array(X, chunks=(1000, 2)), da.from_array(y, chunks=1000)
+    ).adapt(da.from_array(X_new, chunks=(1000, 2)))
+    assert plain.evidence_cutoff_ == 1.0

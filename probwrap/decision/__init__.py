@@ -31,6 +31,7 @@ from ._guarantee import (
     binomial_tail_pvalue,
     guaranteed_cutoff,
 )
+from ._guarantee_classes import GuaranteedOffsets, guaranteed_class_offsets
 from ._offsets import (
     ClassOffsetResult,
     OffsetCurve,
@@ -49,6 +50,7 @@ __all__ = [
     "CutoffSearchResult",
     "GuaranteeUnreachableError",
     "GuaranteedCutoff",
+    "GuaranteedOffsets",
     "OffsetCurve",
     "action_savings",
     "add_reject_action",
@@ -65,6 +67,7 @@ __all__ = [
     "cutoff_interval",
     "expected_costs",
     "fit_action_budget",
+    "guaranteed_class_offsets",
     "guaranteed_cutoff",
     "make_cost_scorer",
     "plugin_cutoff",

@@ -232,7 +232,9 @@ def _em_step(block, ratio_prior):
 def _means(block, k):
     p, w = block
     hard = w @ np.eye(k)[np.argmax(p, axis=1)]
-    return w @ p, hard, np.array([w.sum(), float(np.dot(w, w)), p.shape[0]])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        entropy = float(w @ -np.where(p > 0, p * np.log(p), 0.0).sum(axis=1))
+    return w @ p, hard, np.array([w.sum(), float(np.dot(w, w)), p.shape[0], entropy])
 
 
 def _em_dask(dask, parts, src, init, total, tol, max_iter, pseudo=None, scale=1.0):
@@ -271,7 +273,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
     make = dask.delayed(_target_block, pure=True)
     parts = _persist(dask, [make(estimator, est.calibrator_, b, wb) for b, wb in zip(blocks, ws, strict=True)])
     try:
-        soft_mean, hard_mean, (total, squared, n_rows) = _reduce(dask, _means, parts, k)
+        soft_mean, hard_mean, (total, squared, n_rows, entropy) = _reduce(dask, _means, parts, k)
         if total <= 0:
             raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
         src = est.source_prior_
@@ -305,12 +307,18 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             prior = point.prior
     finally:
         parts.clear()
-    from ..shift._shift_tests import _score_stat_moments
+    from ..shift._shift_tests import _null_harm_scale_moments, _score_stat_moments
 
     mean = su / total
-    stat, pvalue = _score_stat_moments(
-        (mean, suu / total - np.outer(mean, mean), n_eff), getattr(est, "_source_score", None), k
-    )
+    cov = suu / total - np.outer(mean, mean)
+    source_score = getattr(est, "_source_score", None)
+    stat, pvalue = _score_stat_moments((mean, cov, n_eff), source_score, k)
+    # the same harm scale as in memory (for the max_harm cutoff): from the same sums
+    mean_cov = cov / max(n_eff - 1.0, 1.0)
+    if source_score is not None:
+        mean_cov = mean_cov + source_score[1]
+    harm_scale = _null_harm_scale_moments(soft_mean / total, suu / total, entropy / total, src,
+                                          mean_cov)
     return PriorEstimate(
         prior=prior,
         method=method,
@@ -321,4 +329,5 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         shift_statistic=stat,
         shift_pvalue=pvalue,
         distance=float(distance),
+        null_harm_scale=harm_scale,
     )

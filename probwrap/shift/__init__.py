@@ -8,6 +8,7 @@ from ._adjust import adjust_to_prior, check_prior, project_to_simplex, shift_cut
 from ._alarms import CusumResult, cusum_alarms, cusum_run_length
 from ._batch_cost import expected_cost_by_batch
 from ._calibration import BiasCorrectedScaling
+from ._change_points import ChangePointResult, change_point_posterior
 from ._confusion import acc_prior, bbse_prior, binomial_interval, heldout_confusion
 from ._estimate import (
     BoundaryPriorWarning,
@@ -24,6 +25,8 @@ __all__ = [
     "BiasCorrectedScaling",
     "BoundaryPriorWarning",
     "CALIBRATIONS",
+    "ChangePointResult",
+    "change_point_posterior",
     "CusumResult",
     "cusum_alarms",
     "cusum_run_length",

@@ -158,15 +158,30 @@ def null_harm_scale(
     src = np.asarray(source_prior, dtype=float)
     wn = w / w.sum()
     u = _score_rows(p, src)
-    j = (u * wn[:, None]).T @ u
-    mp = wn @ p
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ent = -np.where(p > 0, p * np.log(p), 0.0).sum(axis=1)
+    return _null_harm_scale_moments(wn @ p, (u * wn[:, None]).T @ u, float(wn @ ent), src,
+                                    mean_cov)
+
+
+def _null_harm_scale_moments(
+    mean_proba: np.ndarray,
+    score_second_moment: np.ndarray,
+    mean_entropy: float,
+    source_prior: np.ndarray,
+    mean_cov: np.ndarray,
+) -> float:
+    """:func:`null_harm_scale` from weighted means over the rows: the mean posterior, the
+    second moment ``E[u u^T]`` of the per-row scores and the mean entropy of the posteriors (so
+    row blocks on a cluster can be summed first)."""
+    src = np.asarray(source_prior, dtype=float)
+    mp = np.asarray(mean_proba, dtype=float)
+    j = np.atleast_2d(score_second_moment)
     k_mat = np.diag(mp[1:] / src[1:] ** 2) + mp[0] / src[0] ** 2 - j
     j_inv = np.linalg.pinv(j)
     sigma = j_inv @ np.atleast_2d(mean_cov) @ j_inv
     lam = float(np.max(np.linalg.eigvals(k_mat @ sigma).real, initial=0.0))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ent = -np.where(p > 0, p * np.log(p), 0.0).sum(axis=1)
-    loss = float(wn @ ent)
+    loss = float(mean_entropy)
     if not (loss > 0 and np.isfinite(lam)):
         return 0.0
     return max(lam, 0.0) / (2.0 * loss)
