@@ -110,9 +110,10 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         help=f"reliability bins (default 10, at most {MAX_BINS})")
     add_resamples_flag(parser, allow_zero=False)
     parser.add_argument("--group-column", metavar="G",
-                        help="binary files: column of group labels (e.g. depot); adds a 'By "
-                        "group' section with calibration, scores and the rule's error rates "
-                        "and cost per group, largest gaps first")
+                        help="column of group labels (e.g. depot); adds a 'By group' section "
+                        "with calibration, scores and the rule's error rates (binary) or "
+                        "action shares (several classes) and cost per group, largest gaps "
+                        "first")
     add_alarm_flags(parser)
     add_guarantee_flags(parser)
     add_late_label_flags(parser)
@@ -208,9 +209,12 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         check_row_count("report", P.shape[0], args.scores, "labelled rows")
         if q is not None:
             check_row_count("report", q.shape[0], args.unlabelled, "unlabelled rows")
+        extra = {}
+        if args.group_column is not None:
+            extra["groups"] = _group_labels(frame, args.group_column, args.scores)
         content = _build_and_write(
             args, stages, y_true=y, y_prob=P, costs=matrix, capacity=capacity,
-            action_names=actions, unlabelled_prob=q, class_names=columns,
+            action_names=actions, unlabelled_prob=q, class_names=columns, **extra,
         )
     summary = {"out": args.out, "n_rows": int(content.n_rows),
                "n_classes": int(content.n_classes)}
@@ -321,8 +325,6 @@ def _handler(args: argparse.Namespace) -> int:
     if (args.score_column is None) == (args.class_columns is None):
         parser.error("give either --score-column (binary) or --class-columns (one per class)")
     if args.class_columns is not None:
-        if args.group_column is not None:
-            parser.error("--group-column is available with --score-column (binary) only")
         return _class_handler(args, parser)
     if args.cost_matrix is not None or args.actions is not None or args.capacity_action:
         parser.error("--cost-matrix, --actions and --capacity-action need --class-columns")

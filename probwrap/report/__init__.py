@@ -165,10 +165,13 @@ def write_report(
         more as ``("done", total, total)``; for a progress display.
 
     groups : array-like of shape (n,), optional
-        Binary reports: a group label per labelled row; adds a "By group" section with
+        A group label per labelled row; adds a "By group" section. Binary reports use
         :func:`probwrap.metrics.calibration_by_group` (calibration, scores with intervals and
-        the chosen rule's share acted on, error rates and mean cost per group, largest gaps
-        first, groups too small to judge marked). In ``content.group_checks``.
+        the chosen rule's share acted on, error rates and mean cost per group); the general
+        form shows top-label and classwise calibration error, the largest class-share gap,
+        Brier score and log loss with intervals, and the rule in use's mean cost and action
+        shares. Largest gaps first, groups too small to judge marked. In
+        ``content.group_checks``.
     guarantee : dict, optional
         Binary reports with costs: a promise to certify on the labelled rows, as for
         :func:`probwrap.decision.guaranteed_cutoff` (``{"requirement": "recall", "target":

@@ -199,12 +199,9 @@ def collect_content(
         unlabelled_prob=unlabelled_prob, X_unlabelled=X_unlabelled, prior_shift=prior_shift,
         batch_size=batch_size, n_bins=n_bins, n_resamples=n_resamples,
         confidence_level=confidence_level, rng=rng, title=title, policy=policy, calib=calib,
-        class_names=class_names, progress=progress,
+        class_names=class_names, progress=progress, groups=groups,
     )
     if general is not None:
-        if groups is not None:
-            raise ValueError("`groups` is available for binary reports (two classes, two "
-                             "actions) only.")
         if guarantee is not None:
             raise ValueError("`guarantee` is available for binary reports (two classes, two "
                              "actions, one cutoff) only.")

@@ -14,6 +14,7 @@ from ..plot import (
 from ._alarm_chart import alarm_svg
 from ._common import draw_figure, figure_notes
 from ._content import BAYES_NAME, HALF_NAME, ReportContent
+from ._general_groups import multiclass_group_section
 from ._general_html import general_figures, general_glance, general_sections
 from ._groups_html import group_section
 from ._html_parts import (
@@ -440,7 +441,7 @@ def make_figures(c: Any) -> dict[str, str]:
 def render_html(c: Any, figures: dict[str, str]) -> str:
     """The complete page."""
     if getattr(c, "kind", "binary") == "general":
-        body = general_sections(c, figures)
+        body = general_sections(c, figures) + multiclass_group_section(c)
     else:
         body = (_calibration_section(c, figures) + _decision_section(c, figures)
                 + _prevalence_section(c, figures) + group_section(c))
