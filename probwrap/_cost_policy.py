@@ -11,6 +11,13 @@ from sklearn.base import clone
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import column_or_1d
 
+from ._cost_policy_summary import (  # SUMMARY_BINS: read by the prior-shift wrapper from here
+    CURVE_POINTS,
+    SMALL_HELDOUT_ROWS,
+    SUMMARY_BINS,  # noqa: F401
+    _heldout_summary,
+    _summary_interval,
+)
 from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, check_fitted, is_frozen
 from ._validation import check_labels, check_sample_weight, plain
 from .decision import (
@@ -33,15 +40,6 @@ from .decision import (
 from .decision._cutoff import _thin_cost_curve
 
 __all__ = ["CostPolicyWrapper"]
-
-#: Up to this many held-out rows (of positive weight) a fitted wrapper keeps them: the curve at
-#: every distinct probability and the row bootstrap of ``cutoff_interval_``, as written.
-SMALL_HELDOUT_ROWS = 20_000
-#: Beyond it, ``cost_curve_`` keeps about this many decisions (the optimum itself is exact) ...
-CURVE_POINTS = 4097
-#: ... and the interval resamples a tally of the held-out probabilities with at most this many
-#: bins (log-odds bins of ``tally_resolution``, widened by powers of two while there are more).
-SUMMARY_BINS = 1 << 13
 
 _STRATEGIES = ("bayes", "tuned", "fixed")
 _BINARY_ONLY = "Only binary classification is supported"
@@ -549,6 +547,7 @@ class CostPolicyWrapper(HeldOutClassifierBase):
                 self._interval_inputs = (p, ho.y_index, matrix, ho.sample_weight, ho.fold, share)
             else:
                 self.cost_curve_ = _thin_cost_curve(res, CURVE_POINTS)
+                del res  # the full curve (three arrays as long as the rows) goes before the tally
                 self._interval_inputs = (
                     "summary", _heldout_summary(self, p, ho, matrix, share), matrix, share
                 )
@@ -703,76 +702,6 @@ class CostPolicyWrapper(HeldOutClassifierBase):
         if self._binary_only():
             tags.classifier_tags.multi_class = False
         return tags
-
-
-def _heldout_summary(policy: CostPolicyWrapper, p: np.ndarray, ho: Any, matrix, share) -> dict:
-    """What ``cutoff_interval_`` needs from many held-out rows, at a size independent of them.
-
-    The fold cutoffs are searched now on every row (one search in all); the rows themselves are
-    reduced to two tallies of their log-odds on the same bins: weighted label counts and row
-    counts (for the Poisson bootstrap, drawn when the interval is read).
-    """
-    from .scale._entry import check_resolution, tally_scores
-
-    w = ho.sample_weight
-    fold_cutoffs = []
-    for k in np.unique(ho.fold[ho.fold >= 0]):
-        rows = np.flatnonzero((ho.fold == k) & (w > 0))
-        if rows.size:
-            fold_cutoffs.append(search_cutoff(
-                p[rows], ho.y_index[rows], matrix, sample_weight=w[rows], capacity=share,
-                score_bounds=(0.0, 1.0),
-            ).cutoff)
-    present = w > 0
-    with np.errstate(divide="ignore"):
-        s = np.log(p[present]) - np.log1p(-p[present])
-    # probabilities of exactly 0 or 1 go to the outermost finite bins' neighbours
-    finite = s[np.isfinite(s)]
-    span = (finite.max() - finite.min()) if finite.size else 1.0
-    s = np.clip(s, (finite.min() if finite.size else 0.0) - 1.0, (finite.max() if finite.size else 0.0) + 1.0)
-    resolution = check_resolution(policy.tally_resolution)
-    while (span + 2.0) / resolution > SUMMARY_BINS:
-        resolution *= 2.0
-    y = ho.y_index[present]
-    weighted = tally_scores(s, y, sample_weight=w[present], resolution=resolution)
-    rows = tally_scores(s, y, resolution=resolution)
-    return {"weighted": weighted, "rows": rows.counts, "folds": np.asarray(fold_cutoffs, float)}
-
-
-def _summary_interval(summary: dict, matrix, share, policy: CostPolicyWrapper) -> Any:
-    """Percentile bootstrap of the cutoff from the held-out tally (Poisson bin counts)."""
-    from sklearn.utils import check_random_state
-
-    from .decision import CutoffInterval
-
-    tally = summary["weighted"]
-    counts, row_counts = tally.counts, summary["rows"]
-    rep = 1.0 / (1.0 + np.exp(-tally.bin_scores))
-    bin_idx, label = np.nonzero(counts > 0)
-    p = rep[bin_idx]
-    mean_weight = counts[bin_idx, label] / row_counts[bin_idx, label]
-    rng = check_random_state(policy.random_state)
-    found = np.full(int(policy.n_resamples), np.nan)
-    for b in range(found.shape[0]):
-        # a cell of c rows drawn Poisson(1) times each holds Poisson(c) rows of the resample
-        wb = rng.poisson(row_counts[bin_idx, label]) * mean_weight
-        if wb.sum() > 0:
-            found[b] = search_cutoff(
-                p, label, matrix, sample_weight=wb, capacity=share, score_bounds=(0.0, 1.0)
-            ).cutoff
-    found = found[np.isfinite(found)]
-    alpha = (1.0 - float(policy.confidence_level)) / 2.0
-    low, high = (float(v) for v in np.quantile(found, [alpha, 1.0 - alpha]))
-    folds = summary["folds"]
-    return CutoffInterval(
-        low=low,
-        high=high,
-        confidence_level=float(policy.confidence_level),
-        bootstrap_cutoffs=found,
-        fold_cutoffs=folds,
-        fold_low=float(folds.min()) if folds.size else low,
-        fold_high=float(folds.max()) if folds.size else high,
-    )
 
 
 def _check_cutoff(cutoff: Any) -> float:

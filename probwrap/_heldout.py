@@ -41,8 +41,11 @@ __all__ = ["HeldOutClassifierBase", "HeldOutPredictions"]
 
 
 def _is_dask(obj: Any) -> bool:
-    """Whether ``obj`` is a Dask collection (checked without importing Dask)."""
-    return hasattr(obj, "__dask_graph__")
+    """Whether ``obj`` is a Dask collection or a Spark DataFrame (rows the wrappers tally where
+    they live, through ``probwrap.scale._entry``); checked without importing either."""
+    return hasattr(obj, "__dask_graph__") or (
+        type(obj).__module__.startswith("pyspark.sql") and hasattr(obj, "mapInPandas")
+    )
 
 
 def _multiclass_dask(estimator: Any, X: Any, y: Any, sample_weight: Any) -> bool:
@@ -177,7 +180,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     "classes."
                 )
             values = np.asarray(getattr(estimator, response)(X), dtype=float)
-            fold = np.full(n, -1, dtype=int)
+            # every row is in no fold: a read-only view of one value, not n of them
+            fold = np.broadcast_to(np.array(-1, dtype=int), (n,))
             n_folds = 0
             classes = est_classes
         else:
@@ -242,7 +246,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             response=response,
             classes=self.classes_,
             y_index=np.asarray(y_index, dtype=int),
-            sample_weight=sw if sw is not None else np.ones(n, dtype=float),
+            # unit weights as a read-only view of one value (no per-row array)
+            sample_weight=sw if sw is not None else np.broadcast_to(np.array(1.0), (n,)),
             fold=fold,
             n_folds=n_folds,
             estimator=estimator,

@@ -34,9 +34,11 @@ class HeldOutPredictions:
     y_index : ndarray of shape (n,)
         Index of each row's label in ``classes``.
     sample_weight : ndarray of shape (n,)
-        Validated row weights (ones when none were given).
+        Validated row weights (ones when none were given: then a read-only view of one value,
+        so that no per-row array is made).
     fold : ndarray of shape (n,)
-        Fold whose model predicted each row; ``-1`` for every row of a frozen estimator.
+        Fold whose model predicted each row; ``-1`` for every row of a frozen estimator (a
+        read-only view of one value).
     n_folds : int
         Number of folds; 0 for a frozen estimator.
     estimator : estimator

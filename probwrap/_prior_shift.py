@@ -11,22 +11,13 @@ import numpy as np
 
 from ._cost_policy import SMALL_HELDOUT_ROWS, SUMMARY_BINS
 from ._heldout import HeldOutClassifierBase, _is_dask, _multiclass_dask, check_fitted
+from ._prior_shift_tallied import _tally_rows, tallied_adapt, tallied_monitor
 from ._validation import plain
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
 from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
 from .shift._shift_tests import evidence_cutoff
 
 __all__ = ["PriorShiftWrapper"]
-
-
-def _tally_rows(tally: Any) -> float:
-    """Effective number of the rows behind a tally (its bins' weights are counts of rows).
-
-    Kish's count when the tally knows the sum of squared weights, otherwise its total weight
-    (exact for unit weights).
-    """
-    rows = tally.effective_rows
-    return float(rows) if np.isfinite(rows) else float(tally.total_weight)
 
 
 class PriorShiftWrapper(HeldOutClassifierBase):
@@ -419,29 +410,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         )
         if poisson:
             # Some rows are tallied: one Poisson bootstrap over tallied and in-memory rows alike.
-            from ._validation import check_sample_weight
-            from .scale._entry import replicate_seed, tally_prior_interval
-            from .shift._estimator import _widen
-
-            rows = None if target is None else _tally_rows(target)
-            res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
-                               interval=False)
-            w = check_sample_weight(sample_weight, np.asarray(proba).shape[0])
-            centre = res.ml_prior if res.ml_prior is not None else res.prior
-            if res.identified:
-                interval = tally_prior_interval(
-                    est, source, np.asarray(proba, dtype=float), w, target, centre,
-                    n_replicates=est.n_resamples, seed=replicate_seed(rs),
-                )
-                n_eff = rows if rows is not None else float(w.sum() ** 2 / np.dot(w, w))
-                interval = _widen(interval, res.prior, centre, n_eff, est.confidence_level)
-            else:
-                k = self.classes_.shape[0]
-                interval = np.column_stack([np.zeros(k), np.ones(k)])
-            dropped = getattr(est, "_last_dropped", 0)
-            from dataclasses import replace
-
-            res = replace(res, interval=interval, n_dropped=dropped)
+            res, interval = tallied_adapt(est, source, target, proba, sample_weight, rs,
+                                          self.classes_.shape[0])
         else:
             rows = None if target is None else _tally_rows(target)
             res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows)
@@ -524,35 +494,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             )
         # Fitted on Dask input: the labelled rows are a tally, so each batch's interval is a
         # Poisson bootstrap over the tally's replicates and the batch's rows.
-        import copy
-
-        from sklearn.utils import check_random_state
-
-        from ._validation import check_sample_weight
-        from .scale._entry import tally_prior_interval
-
-        point = copy.copy(est)
-        point.n_resamples = 0
-        table = prior_by_batch(
-            point, proba, batches, batch_size=batch_size, sample_weight=sample_weight
-        )
-        p = np.asarray(proba, dtype=float)
-        n = p.shape[0]
-        w = check_sample_weight(sample_weight, n)
-        if batch_size is not None:
-            labels = np.arange(n) // int(batch_size)
-        else:
-            labels = np.asarray(batches)
-            labels = labels.astype(str) if labels.dtype == object else labels
-        rng = check_random_state(est.random_state)
-        for i in range(table.shape[0]):
-            rows = labels == table["batch"][i]
-            iv = tally_prior_interval(
-                est, source, p[rows], w[rows], None, table["prior"][i],
-                n_replicates=est.n_resamples, seed=rng.randint(2**31 - 1),
-            )
-            table["lower"][i], table["upper"][i] = iv[:, 0], iv[:, 1]
-        return table
+        return tallied_monitor(est, source, proba, batches, batch_size, sample_weight)
 
     # -- prediction ------------------------------------------------------------------------------
     def _prior_in_use(self) -> np.ndarray:

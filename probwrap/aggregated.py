@@ -147,6 +147,10 @@ def tally_counts(
     Calibrate and evaluate grouped outcomes without expanding them: the tally's rows feed the
     maps, the cutoff search and the metrics as usual.
 
+    ``scores`` may also be a Spark DataFrame with one row per group: then ``successes`` and
+    ``trials`` name two of its columns, its one other column holds the scores, and each
+    partition is tallied on the executors (only the tallies reach the driver).
+
     Examples
     --------
     >>> from probwrap.aggregated import tally_counts
@@ -154,6 +158,12 @@ def tally_counts(
     >>> t.counts.tolist()
     [[8.0, 2.0], [3.0, 9.0]]
     """
+    if type(scores).__module__.startswith("pyspark.sql"):
+        # a Spark DataFrame of (score, successes, trials) columns, tallied per partition
+        from .scale._spark import is_spark_frame, spark_tally_counts
+
+        if is_spark_frame(scores):
+            return spark_tally_counts(scores, successes, trials, resolution, _check_counts)
     k, n = _check_counts(successes, trials)
     s = np.asarray(scores, dtype=float)
     if s.ndim != 1 or s.shape[0] != k.shape[0]:

@@ -3,8 +3,8 @@
 With ``PROBWRAP_CI=1`` in the environment (``.ci/run`` sets it), a skipped test fails the run
 unless its reason matches one of ``ALLOWED_SKIPS``: skips that depend on the installed versions
 (a feature a dependency gained later) or that a docs block's ``not-run`` marker explains.
-Everything else CI is meant to run — the Dask, pandas, statsmodels and matplotlib tests and the
-rendering tests in headless Chromium — must run there.
+Everything else CI is meant to run — the Dask, Spark, pandas, statsmodels and matplotlib tests
+and the rendering tests in headless Chromium — must run there.
 
 With ``PROBWRAP_EXPECT_INSTALLED=1`` the run also fails unless every ``probwrap`` module it
 imported came from an installed copy (site-packages), not from the source tree: CI sets it when
@@ -183,3 +183,41 @@ def client():
     with distributed.Client(cluster) as c:
         yield c
     cluster.close()
+
+
+# Spark's Python workers (also those of the Spark docs blocks, run in subprocesses) use this
+# interpreter, so they import the probwrap under test.
+os.environ.setdefault("PYSPARK_PYTHON", sys.executable)
+
+
+@pytest.fixture(scope="session")
+def spark():
+    """One local[2] Spark session for the whole run (tests/test_spark*.py), on loopback only.
+
+    Small settings for a small machine: two shuffle partitions, no web UI, a modest driver heap.
+    """
+    pytest.importorskip(
+        "pyspark", reason="pyspark is not installed: pip install '.[spark]' to run the Spark tests"
+    )
+    if shutil.which("java") is None and not os.environ.get("JAVA_HOME"):
+        pytest.skip(
+            "no Java runtime (java not on PATH, JAVA_HOME unset): install the Debian package "
+            "'openjdk-17-jre-headless' to run the Spark tests"
+        )
+    from pyspark.sql import SparkSession
+
+    session = (
+        SparkSession.builder.master("local[2]")
+        .appName("probwrap-tests")
+        .config("spark.ui.enabled", "false")
+        .config("spark.sql.shuffle.partitions", "2")
+        .config("spark.default.parallelism", "2")
+        .config("spark.driver.memory", "512m")
+        .config("spark.driver.host", "127.0.0.1")
+        .config("spark.driver.bindAddress", "127.0.0.1")
+        .config("spark.sql.execution.arrow.pyspark.enabled", "true")
+        .getOrCreate()
+    )
+    session.sparkContext.setLogLevel("ERROR")
+    yield session
+    session.stop()

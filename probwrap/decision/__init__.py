@@ -17,13 +17,12 @@ from ._costs import (
     zero_one_costs,
 )
 from ._cutoff import (
-    CutoffInterval,
     CutoffSearchResult,
     capacity_cutoff,
     check_capacity,
-    cutoff_interval,
     search_cutoff,
 )
+from ._cutoff_interval import CutoffInterval, cutoff_interval
 from ._guarantee import (
     GUARANTEE_REQUIREMENTS,
     GuaranteedCutoff,

@@ -8,7 +8,8 @@ from typing import Any
 import numpy as np
 
 from .._validation import check_sample_weight, check_scores, plain, power_of_two_unit
-from ._cutoff import _SortedRows, check_capacity
+from ._cutoff import check_capacity
+from ._cutoff_rows import _SortedRows
 
 __all__ = ["ActionBudget", "action_savings", "fit_action_budget", "budget_actions"]
 

@@ -1,34 +1,83 @@
-"""Scale: mergeable score tallies, and Dask input to the wrappers.
+"""Scale: mergeable score tallies, and Dask or Spark input to the wrappers.
 
 A :class:`ScoreTally` holds weighted label counts per fine bin of the log-odds scale. Tallies of
 disjoint chunks merge by addition, so data of any size — NumPy chunks, or Dask arrays and
-DataFrames on a cluster — reduce to a tally that fits in memory. :meth:`ScoreTally.to_rows`
+DataFrames on a cluster, Spark DataFrames partition by partition — reduce to a tally that fits
+in memory. :meth:`ScoreTally.to_rows`
 turns it into weighted rows that the calibration maps, the cutoff search, the metrics and the
 prior estimators accept through their ``sample_weight``.
 
-The core of this module needs only NumPy; Dask is imported only when Dask input is given.
+The core of this module needs only NumPy; Dask or PySpark is imported only when such input is
+given. :func:`add_predictions` scores a Spark DataFrame with a fitted wrapper.
 """
 
 from .._validation import plain
 from ._build import tally_scores
 from ._tally import DEFAULT_RESOLUTION, ScoreTally, merge_tallies
 
-__all__ = ["DEFAULT_RESOLUTION", "ScoreTally", "merge_tallies", "tally_scores", "tally_model"]
+__all__ = [
+    "DEFAULT_RESOLUTION",
+    "ScoreTally",
+    "add_predictions",
+    "merge_tallies",
+    "tally_model",
+    "tally_scores",
+]
+
+
+def add_predictions(model, frame, *, prefix: str = ""):
+    """Add a fitted classifier's probability and action columns to a Spark DataFrame.
+
+    See :func:`probwrap.scale._spark.add_predictions` for the columns; the model is broadcast
+    to the executors once and one pandas UDF scores the rows where they live.
+
+    Parameters
+    ----------
+    model : fitted classifier
+        A probwrap wrapper (or any fitted classifier with ``predict_proba`` and ``predict``).
+    frame : pyspark.sql.DataFrame
+        Rows to score; the model receives the columns named by its ``feature_names_in_`` or,
+        without those, every column in order.
+    prefix : str, default=""
+        Put before the names of the added columns.
+
+    Returns
+    -------
+    pyspark.sql.DataFrame
+        ``frame`` with ``probability`` (binary: of ``classes_[1]``; multiclass: an array in
+        ``classes_`` order; for a :class:`~probwrap.PriorShiftWrapper` calibrated but not
+        adjusted), ``adjusted_probability`` (prior-shift wrappers only) and ``action``
+        (``predict``).
+
+    Examples
+    --------
+    >>> from probwrap.scale import add_predictions
+    >>> scored = add_predictions(policy, parcels)  # doctest: +SKIP
+    >>> scored.select("probability", "action").show(3)  # doctest: +SKIP
+    """
+    from ._spark import add_predictions as _add
+
+    return _add(model, frame, prefix=prefix)
 
 
 def tally_model(estimator, X, y=None, *, sample_weight=None, response="predict_proba",
                 resolution=DEFAULT_RESOLUTION) -> ScoreTally:
-    """Tally a fitted binary classifier's log-odds on Dask rows ``X``, block by block.
+    """Tally a fitted binary classifier's log-odds on Dask or Spark rows ``X``, block by block.
 
     Parameters
     ----------
     estimator : fitted binary classifier
         Used as is (for example a :class:`~sklearn.frozen.FrozenEstimator`).
-    X : dask array or dask DataFrame
-        Rows, in whatever form the estimator accepts per block.
-    y : dask array / Series or array-like, default=None
+    X : dask array, dask DataFrame or Spark DataFrame
+        Rows, in whatever form the estimator accepts per block. A Spark DataFrame is tallied
+        partition by partition with ``mapInPandas``, the estimator broadcast once; it receives
+        the columns of its ``feature_names_in_`` (or all columns but ``y`` and
+        ``sample_weight``).
+    y : dask array / Series or array-like, or str, default=None
         Labels (from ``estimator.classes_``), partitioned like ``X``; None for unlabelled rows.
-    sample_weight : dask array / Series or array-like, default=None
+        With a Spark DataFrame, the name of its label column.
+    sample_weight : dask array / Series or array-like, or str, default=None
+        Row weights (a column name with a Spark DataFrame).
     response : {"predict_proba", "decision_function"}, default="predict_proba"
         Probabilities become log-odds ``log p1 - log p0``; decision values are used as they are.
     resolution : float, default=1e-3
@@ -39,16 +88,26 @@ def tally_model(estimator, X, y=None, *, sample_weight=None, response="predict_p
         Labels are indices into ``estimator.classes_``.
     """
     from ._dask import dask_tally_of_model, is_dask_collection
+    from ._spark import is_spark_frame
     from ._tally import _check_resolution
 
-    if not is_dask_collection(X):
-        raise ValueError(f"`X` must be a Dask array or DataFrame; got {type(X).__name__}.")
+    spark = is_spark_frame(X)
+    if not (spark or is_dask_collection(X)):
+        raise ValueError(
+            f"`X` must be a Dask array or DataFrame, or a Spark DataFrame; got {type(X).__name__}."
+        )
     if response not in ("predict_proba", "decision_function"):
         raise ValueError(
             f"`response` must be 'predict_proba' or 'decision_function'; got {plain(response)!r}."
         )
     if len(getattr(estimator, "classes_", ())) != 2:
         raise ValueError("`estimator` must be a fitted binary classifier (two classes_).")
+    if spark:
+        from ._spark import spark_tally_of_model
+
+        return spark_tally_of_model(
+            estimator, response, X, y, sample_weight, resolution=_check_resolution(resolution)
+        )
     return dask_tally_of_model(
         estimator, response, X, y, sample_weight, resolution=_check_resolution(resolution)
     )

@@ -46,20 +46,24 @@ def tally_scores(
 
     Parameters
     ----------
-    scores : array-like or dask array of shape (n,)
+    scores : array-like, dask array of shape (n,), or Spark DataFrame
         Scores on the log-odds scale (binary log-odds, or one class's one-vs-rest log-odds).
-    y : array-like or dask array of shape (n,), default=None
-        Integer label indices ``0..n_labels-1`` (booleans count as 0/1). Without ``y`` the
-        tally is unlabelled (one column of weights), as for unlabelled deployment data.
-    sample_weight : array-like or dask array of shape (n,), default=None
-        Non-negative row weights (frequencies).
+        A Spark DataFrame holds the scores in its one column not named by ``y`` or
+        ``sample_weight``; it is tallied partition by partition on the executors.
+    y : array-like or dask array of shape (n,), or str, default=None
+        Integer label indices ``0..n_labels-1`` (booleans count as 0/1); with a Spark DataFrame,
+        the name of its label column. Without ``y`` the tally is unlabelled (one column of
+        weights), as for unlabelled deployment data.
+    sample_weight : array-like or dask array of shape (n,), or str, default=None
+        Non-negative row weights (frequencies); with a Spark DataFrame, a column name.
     n_labels : int, default=None
         Number of label columns (default 2 with ``y``; multiclass labels need it).
     resolution : float, default=1e-3
         Bin width on the score scale.
     chunk_size : int, default=1_000_000
         Rows per chunk for in-memory input (the memory of the intermediate arrays). Dask input
-        is tallied block by block on the cluster and only the per-block tallies travel.
+        is tallied block by block on the cluster, Spark input partition by partition on the
+        executors, and only the per-block (per-partition) tallies travel.
     n_replicates : int, default=0
         Also tally this many Poisson-bootstrap replicates (``replicates``, memory
         ``n_replicates * n_bins * n_labels`` floats, whatever the number of rows): in replicate
@@ -68,7 +72,8 @@ def tally_scores(
         et al. 2012). Fits repeated on the replicates give bootstrap intervals.
     random_state : int, RandomState or None, default=None
         Seed of the replicate draws; chunk (or Dask block) ``i`` draws from its own generator
-        seeded by this seed and ``i``, so the result does not depend on scheduling.
+        seeded by this seed and ``i``, so the result does not depend on scheduling (on Spark:
+        chunk ``j`` of partition ``p``, so it depends on the frame's partitioning only).
 
     Returns
     -------
@@ -95,6 +100,11 @@ def tally_scores(
         raise ValueError(f"`chunk_size` must be a positive integer; got {plain(chunk_size)!r}.")
     n_rep = _check_n_replicates(n_replicates)
     seed = replicate_seed(random_state) if n_rep else 0
+    if type(scores).__module__.startswith("pyspark.sql"):
+        from ._spark import is_spark_frame, spark_tally_scores
+
+        if is_spark_frame(scores):
+            return spark_tally_scores(scores, y, sample_weight, n_labels, r, n_rep, seed)
     if any(_is_dask(v) for v in (scores, y, sample_weight)):
         from ._dask import tally_dask_scores
 

@@ -261,8 +261,6 @@ def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: 
     """
     from sklearn.frozen import FrozenEstimator
 
-    from .._predictions import HeldOutPredictions
-
     estimator = owner.estimator
     if not isinstance(estimator, FrozenEstimator):
         raise ValueError(
@@ -288,6 +286,15 @@ def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: 
         estimator, response, X, y, sample_weight, resolution=resolution, n_replicates=n_rep,
         seed=seed, stream=0,
     )
+    return heldout_rows_from_tally(owner, estimator, tally, response)
+
+
+def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, response: str):
+    """The held-out predictions of a frozen binary estimator whose rows were tallied (Dask or
+    Spark): one row per (bin, class) of the tally; sets the owner's fitted attributes."""
+    from .._predictions import HeldOutPredictions
+
+    classes = np.asarray(estimator.classes_)
     if tally.total_weight <= 0:
         raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
     weighted = np.flatnonzero(tally.label_weight > 0)
@@ -376,10 +383,15 @@ def dask_predict(method: Any, X: Any, n_columns: int | None, dtype: Any = float)
 def _monitor_block(owner, est, source, seed, Xb, wb):
     """Prior estimate of one block on the worker that holds it (a block fits in memory)."""
     from .._validation import check_sample_weight
-    from ._bootstrap import tally_prior_interval
 
     proba = np.asarray(owner.estimator_.predict_proba(Xb), dtype=float)
-    w = check_sample_weight(wb, proba.shape[0])
+    return monitor_proba(est, source, seed, proba, check_sample_weight(wb, proba.shape[0]))
+
+
+def monitor_proba(est, source, seed, proba, w):
+    """One row of a monitor table from a batch's probabilities and weights (Dask or Spark)."""
+    from ._bootstrap import tally_prior_interval
+
     if source is None or source.n_replicates == 0 or est.n_resamples == 0:
         res = est.estimate(proba, w, random_state=seed)
         interval = res.interval

@@ -7,6 +7,7 @@ about scikit-learn estimators. :class:`probwrap.PriorShiftWrapper` is the estima
 from ._adjust import adjust_to_prior, check_prior, project_to_simplex, shift_cutoff
 from ._alarms import CusumResult, cusum_alarms, cusum_run_length
 from ._batch_cost import expected_cost_by_batch
+from ._by_batch import prior_by_batch
 from ._calibration import BiasCorrectedScaling
 from ._change_points import ChangePointResult, change_point_posterior
 from ._confusion import acc_prior, bbse_prior, binomial_interval, heldout_confusion
@@ -17,7 +18,7 @@ from ._estimate import (
     em_prior,
     prior_log_likelihood,
 )
-from ._estimator import CALIBRATIONS, INTERVALS, PRIOR_METHODS, PriorEstimator, prior_by_batch
+from ._estimator import CALIBRATIONS, INTERVALS, PRIOR_METHODS, PriorEstimator
 from ._interval import bca_interval, jackknife_acceleration, score_interval
 from ._shift_tests import ShiftTestResult, shift_score_test, shift_test
 

@@ -1,4 +1,8 @@
-"""One object that learns from labelled held-out posteriors and estimates priors of new rows."""
+"""One object that learns from labelled held-out posteriors and estimates priors of new rows.
+
+The resampling behind its bootstrap intervals lives in :mod:`._resample`; the batch-by-batch
+table in :mod:`._by_batch`.
+"""
 
 from __future__ import annotations
 
@@ -7,15 +11,19 @@ import warnings
 from typing import Any
 
 import numpy as np
-from scipy.special import expit
 from sklearn.utils import check_random_state
 
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ..calibration._logodds import proba_to_log_proba
-from ._calibration import BiasCorrectedScaling, _log_softmax
-from ._confusion import _simplex_least_squares, acc_prior, bbse_prior, heldout_confusion
+from ._calibration import BiasCorrectedScaling
+from ._confusion import acc_prior, bbse_prior, heldout_confusion
 from ._estimate import BoundaryPriorWarning, PriorEstimate, _solve_prior, _warn_empty_columns
-from ._interval import bca_interval, score_interval
+from ._interval import score_interval
+from ._resample import (  # noqa: F401  (_interval_from_draws: imported from here elsewhere)
+    _interval_from_draws,
+    _Resampling,
+    _widen,
+)
 from ._shift_tests import (
     _mean_cov,
     _score_rows,
@@ -24,7 +32,7 @@ from ._shift_tests import (
     null_harm_scale,
 )
 
-__all__ = ["PriorEstimator", "PRIOR_METHODS", "CALIBRATIONS", "INTERVALS", "prior_by_batch"]
+__all__ = ["PriorEstimator", "PRIOR_METHODS", "CALIBRATIONS", "INTERVALS"]
 
 PRIOR_METHODS = ("em", "bbse", "bbse_soft", "acc", "pacc")
 CALIBRATIONS = ("bcts", "vector", None)
@@ -32,23 +40,13 @@ INTERVALS = ("score", "bca", "percentile")
 
 #: Fewer effective unlabelled rows than this draws a warning (common practice: 30 rows).
 FEW_ROWS = 30
-#: Groups of rows left out per sample by the grouped jackknife behind the BCa acceleration.
-JACKKNIFE_GROUPS = 10
-
-
-def _softmax(z: np.ndarray, scale: np.ndarray, bias: np.ndarray) -> np.ndarray:
-    """``softmax(z * scale + bias)`` row-wise; for two columns one logistic function."""
-    if z.shape[1] == 2:
-        p1 = expit(z[:, 1] * scale[1] - z[:, 0] * scale[0] + (bias[1] - bias[0]))
-        return np.column_stack([1.0 - p1, p1])
-    return np.exp(_log_softmax(z * scale + bias, axis=1))
 
 
 def _kish(w: np.ndarray) -> float:
     return float(w.sum() ** 2 / np.dot(w, w))
 
 
-class PriorEstimator:
+class PriorEstimator(_Resampling):
     """Estimate the class priors of unlabelled rows from labelled held-out posteriors.
 
     ``fit`` takes held-out posteriors with their true labels (the source data): it fits the
@@ -249,166 +247,7 @@ class PriorEstimator:
         """Rows behind each labelled entry (Kish's count of a bin; None: one row each)."""
         return getattr(self, "_src_rows", None)
 
-    def __getstate__(self) -> dict:
-        # the per-row bootstrap pieces are a cache, recomputed on demand: never pickled
-        state = self.__dict__.copy()
-        state["_boot"] = None
-        return state
-
-    def _condense_source(self, resolution: float, max_bins: int) -> None:
-        """Replace the kept labelled rows of a binary fit by a tally of their log-odds.
-
-        Everything :meth:`fit` derives from the rows (calibration, source prior, confusion
-        matrices, the score moments of the shift test) stays as computed on every row; only the
-        intervals, which re-read the labelled rows, then read bins instead: per class, the rows
-        whose raw log-odds fall in one bin of width ``resolution`` (doubled until at most
-        ``max_bins`` bins span the scores) become one entry with the bin's weighted mean
-        probability, the bin's total weight and Kish's count of its rows (for the Poisson
-        bootstrap: a bin of ``c`` unit-weight rows drawn Poisson(1) times each holds
-        Poisson(``c``) rows of a resample). Exact up to the binning for unit weights.
-        """
-        src = self._source_rows()
-        if src is None or self.n_classes_ != 2 or self._source_row_counts() is not None:
-            return
-        p, y, w = src
-        keep = w > 0
-        p, y, w = p[keep], y[keep], w[keep]
-        with np.errstate(divide="ignore"):
-            s = np.log(p[:, 1]) - np.log(p[:, 0])
-        finite = np.isfinite(s)
-        res = float(resolution)
-        if finite.any():
-            lo, hi = float(s[finite].min()), float(s[finite].max())
-            while (hi - lo) / res + 1.0 > max_bins:
-                res *= 2.0
-            b = np.floor((np.where(finite, s, lo) - lo) / res).astype(np.int64) + 1
-        else:
-            b = np.zeros(s.shape[0], dtype=np.int64)
-        b = np.where(finite, b, np.where(s > 0, max_bins + 2, 0))  # scores 0 and 1 apart
-        key = b * 2 + y
-        uniq, inverse = np.unique(key, return_inverse=True)
-        inverse = inverse.ravel()
-        m = uniq.shape[0]
-        total = np.bincount(inverse, weights=w, minlength=m)
-        square = np.bincount(inverse, weights=w * w, minlength=m)
-        # the bin's weighted mean log-odds (scores of exactly 0 or 1 keep their own bins)
-        mean = np.bincount(inverse, weights=w * np.where(finite, s, 0.0), minlength=m) / total
-        edge = uniq // 2
-        mean = np.where(edge == 0, -np.inf, np.where(edge == max_bins + 2, np.inf, mean))
-        proba = np.column_stack([expit(-mean), expit(mean)])
-        self._src = (proba, (uniq % 2).astype(int), total)
-        self._src_rows = total * total / square
-        self._boot = None
-
-    # -- the pieces the bootstrap re-uses ------------------------------------------------------
-    def _bootstrap_parts(self) -> dict:
-        """Per-row gradients and Hessians of the calibration loss at the fitted parameters.
-
-        A resample with row weights ``v`` moves the calibration parameters by one Newton step,
-        ``-(sum v H)^-1 sum v g`` (the one-step bootstrap: asymptotically equivalent to refitting
-        each resample, at the cost of two weighted sums).
-        """
-        parts = getattr(self, "_boot", None)
-        if parts is not None:
-            return parts
-        sp, sy, sw = self._src
-        k = self.n_classes_
-        parts = {"y": sy, "w": sw, "onehot": np.eye(k)[sy]}
-        cal = self.calibrator_
-        if cal is None:
-            parts["p"] = sp
-        else:
-            z = proba_to_log_proba(sp)
-            n_scale = 1 if cal.kind == "temperature" else k
-            p = np.exp(_log_softmax(z * cal.scale_ + cal.bias_, axis=1))
-            n = z.shape[0]
-            jac = np.zeros((n, k, n_scale + k - 1))
-            if n_scale == 1:
-                jac[:, :, 0] = z
-            else:
-                jac[:, np.arange(k), np.arange(k)] = z
-            jac[:, np.arange(1, k), n_scale + np.arange(k - 1)] = 1.0
-            resid = p - parts["onehot"]
-            parts["grad"] = np.einsum("nkp,nk->np", jac, resid)
-            curv = p[:, :, None] * np.eye(k)[None] - p[:, :, None] * p[:, None, :]
-            parts["hess"] = np.einsum("nkp,nkl,nlq->npq", jac, curv, jac).reshape(n, -1)
-            parts["z"] = z
-            parts["p"] = p
-            parts["n_scale"] = n_scale
-        self._boot = parts
-        return parts
-
-    def _calibration_at(self, v: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
-        """One-step re-estimate of the calibration's (scale, bias) under labelled weights v."""
-        cal = self.calibrator_
-        if cal is None:
-            return None
-        parts = self._bootstrap_parts()
-        k, n_scale = self.n_classes_, parts["n_scale"]
-        m = n_scale + k - 1
-        g = v @ parts["grad"]
-        h = (v @ parts["hess"]).reshape(m, m)
-        try:
-            step = np.linalg.solve(h + 1e-12 * max(float(np.trace(h)), 1.0) * np.eye(m), g)
-        except np.linalg.LinAlgError:  # pragma: no cover - h is positive definite here
-            step = np.zeros(m)
-        theta = np.concatenate([cal.scale_[:n_scale], cal.bias_[1:]]) - step
-        scale = np.broadcast_to(np.maximum(theta[:n_scale], 0.0), (k,)).astype(float)
-        return scale, np.concatenate([[0.0], theta[n_scale:]])
-
-    def _replicate(
-        self,
-        z_target: np.ndarray | None,
-        p_target: np.ndarray,
-        v_source: np.ndarray | None,
-        v_target: np.ndarray,
-        init: np.ndarray,
-    ) -> np.ndarray | None:
-        """The (unpenalised) estimate under labelled weights ``v_source`` and target weights.
-
-        Returns None when a class has no labelled weight left (its prior is undefined).
-        """
-        k = self.n_classes_
-        src, hard, soft = self.source_prior_, self.confusion_, self.soft_confusion_
-        pt = p_target
-        if v_source is not None:
-            parts = self._bootstrap_parts()
-            counts = v_source @ parts["onehot"]
-            if np.any(counts <= 0):
-                return None
-            src = counts / counts.sum()
-            params = self._calibration_at(v_source)
-            ps = parts["p"]
-            if params is not None:
-                scale, bias = params
-                pt = _softmax(z_target, scale, bias)
-                if self.method != "em":
-                    ps = _softmax(parts["z"], scale, bias)
-            if self.method != "em":
-                vn = v_source / v_source.sum()
-                onehot = parts["onehot"]
-                hard = (np.eye(k)[np.argmax(ps, axis=1)] * vn[:, None]).T @ onehot
-                soft = (ps * vn[:, None]).T @ onehot
-        if v_target.sum() <= 0:
-            return None
-        m = self.method
-        if m == "em":
-            start = init if np.all(init > 0) else src
-            return _solve_prior(pt, v_target, src, start, self.tol, self.max_iter)[0]
-        soft_mode = m in ("bbse_soft", "pacc")
-        c = soft if soft_mode else hard
-        wn = v_target / v_target.sum()
-        mu = wn @ (pt if soft_mode else np.eye(k)[np.argmax(pt, axis=1)])
-        if m.startswith("bbse"):
-            from ._adjust import project_to_simplex
-
-            weights = np.linalg.lstsq(c / c.sum(), mu, rcond=None)[0]
-            return project_to_simplex(weights * src)
-        col = c.sum(axis=0)
-        if np.any(col <= 0):
-            return None
-        return _simplex_least_squares(c / col, mu)[0]
-
+    # -- resampling (the pieces are in ._resample) -----------------------------------------
     def replicate_draws(
         self,
         target_proba: np.ndarray,
@@ -619,220 +458,3 @@ class PriorEstimator:
             BoundaryPriorWarning,
             stacklevel=3,
         )
-
-    def _bootstrap(
-        self,
-        p_raw: np.ndarray,
-        w: np.ndarray,
-        centre: np.ndarray,
-        rng: np.random.RandomState,
-    ) -> tuple[np.ndarray, int]:
-        k = self.n_classes_
-        source = self._source_rows()
-        B = int(self.n_resamples)
-        n = p_raw.shape[0]
-        resample_source = bool(self.resample_source) and source is not None
-        ws = source[2] if resample_source else None
-        # all resample weights drawn up front, labelled then unlabelled, so a seed fixes both
-        gen = np.random.default_rng(rng.randint(2**31 - 1))
-        rows = self._source_row_counts() if resample_source else None
-        if rows is None:
-            src_counts = gen.poisson(1.0, size=(B, ws.shape[0])) if resample_source else None
-            unit = ws
-        else:
-            # tallied labelled rows: a bin of c rows holds Poisson(c) rows of a resample
-            src_counts = gen.poisson(rows, size=(B, ws.shape[0]))
-            unit = ws / rows
-        tgt_counts = gen.poisson(1.0, size=(B, n))
-
-        def draw_source(b: int) -> np.ndarray | None:
-            return None if src_counts is None else src_counts[b] * unit
-
-        def draw_target(b: int) -> np.ndarray:
-            return tgt_counts[b] * w
-
-        draws, dropped = self.replicate_draws(p_raw, draw_source, draw_target, B, centre)
-        jack = None
-        if self.interval == "bca" and draws.shape[0] > 0:
-            jack = self._jackknife(p_raw, w, centre, ws, rng)
-        bounds = _interval_from_draws(
-            centre, draws, jack, self.confidence_level, dropped, B, k,
-        )
-        return bounds, dropped
-
-    def _jackknife(
-        self,
-        p_raw: np.ndarray,
-        w: np.ndarray,
-        centre: np.ndarray,
-        ws: np.ndarray | None,
-        rng: np.random.RandomState,
-    ) -> list[np.ndarray]:
-        """Leave-one-group-out estimates per sample (target rows; labelled rows when resampled)."""
-        out = []
-        samples = [("target", w)] + ([("source", ws)] if ws is not None else [])
-        for name, weights in samples:
-            n = weights.shape[0]
-            groups = min(JACKKNIFE_GROUPS, n)
-            if groups < 2:
-                continue
-            label = np.empty(n, dtype=int)
-            label[rng.permutation(n)] = np.arange(n) % groups
-            values = []
-            for g in range(groups):
-                keep = np.where(label == g, 0.0, weights)
-                if name == "target":
-                    v_s, v_t = ws, keep
-                else:
-                    v_s, v_t = keep, w
-                draws, _ = self.replicate_draws(
-                    p_raw, lambda b, v=v_s: v, lambda b, v=v_t: v, 1, centre
-                )
-                if draws.shape[0] == 0:
-                    break
-                values.append(draws[0])
-            else:
-                out.append(np.asarray(values))
-        return out
-
-
-def _widen(
-    bounds: np.ndarray, point: np.ndarray, centre: np.ndarray, n_eff: float, level: float
-) -> np.ndarray:
-    """Widen a bootstrap interval to contain the point estimate and a Clopper-Pearson floor.
-
-    No estimate from ``n_eff`` unlabelled rows can know a class share better than ``n_eff``
-    labelled rows would, so the interval contains the Clopper & Pearson (1934) interval of the
-    unpenalised estimate on ``n_eff`` rows. This matters where the bootstrap degenerates: an
-    estimate on the edge of the simplex (every resample at 0) would otherwise give [0, 0].
-    """
-    from ._confusion import binomial_interval
-
-    out = bounds.copy()
-    cp = binomial_interval(np.clip(centre, 0.0, 1.0), max(n_eff, 1e-9), level)
-    out[:, 0] = np.minimum(np.minimum(out[:, 0], cp[:, 0]), point)
-    out[:, 1] = np.maximum(np.maximum(out[:, 1], cp[:, 1]), point)
-    return out
-
-
-def _interval_from_draws(
-    centre: np.ndarray,
-    draws: np.ndarray,
-    jackknife: list | None,
-    confidence_level: float,
-    dropped: int,
-    n_resamples: int,
-    k: int,
-) -> np.ndarray:
-    """BCa (with ``jackknife``) or bias-corrected percentile interval, with dropped-resample warnings."""
-    if dropped:
-        warnings.warn(
-            f"{dropped} of {n_resamples} bootstrap resamples were dropped because a class had "
-            "no labelled rows left in them; the interval rests on the other "
-            f"{n_resamples - dropped}. Few labelled rows of some class make every estimate "
-            "of its prior fragile.",
-            UserWarning,
-            stacklevel=4,
-        )
-    if draws.shape[0] == 0:
-        warnings.warn(
-            "Every bootstrap resample was dropped; the interval is [0, 1] for every class "
-            "(nothing is known from the resamples).",
-            UserWarning,
-            stacklevel=4,
-        )
-        return np.column_stack([np.zeros(k), np.ones(k)])
-    if jackknife is None:
-        alpha = (1.0 - confidence_level) / 2.0
-        lo, hi = np.quantile(draws, [alpha, 1.0 - alpha], axis=0)
-        return np.column_stack([lo, hi])
-    return bca_interval(centre, draws, jackknife or None, confidence_level=confidence_level)
-
-
-
-def prior_by_batch(
-    estimator: PriorEstimator,
-    proba: Any,
-    batches: Any = None,
-    *,
-    batch_size: int | None = None,
-    sample_weight: Any = None,
-) -> np.ndarray:
-    """Estimate the class priors batch by batch (for example week by week).
-
-    Parameters
-    ----------
-    estimator : PriorEstimator
-        A fitted estimator.
-    proba : array-like of shape (n, k)
-        Posteriors of the unlabelled rows, in arrival order.
-    batches : array-like of shape (n,), default=None
-        Batch label of each row (a week number, a date, a string); batches appear in the table
-        in the order of their first row. Exactly one of ``batches`` and ``batch_size`` is given.
-    batch_size : int, default=None
-        Consecutive batches of this many rows (the last one may be shorter); labelled 0, 1, ...
-    sample_weight : array-like of shape (n,), default=None
-
-    Returns
-    -------
-    numpy structured array with one record per batch and fields ``batch``, ``n_rows`` (int),
-    ``prior``, ``lower``, ``upper`` (float, shape (k,) each), ``shift_statistic``,
-    ``shift_pvalue`` (float) and ``converged`` (bool). ``table["prior"][:, 1]`` is the series of
-    positive-class prevalences of a binary problem.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from probwrap.shift import PriorEstimator, prior_by_batch
-    >>> rng = np.random.default_rng(0)
-    >>> p1 = rng.uniform(0.05, 0.95, size=600)
-    >>> y = (rng.uniform(size=600) < p1).astype(int)
-    >>> proba = np.column_stack([1 - p1, p1])
-    >>> est = PriorEstimator(n_resamples=20, random_state=0).fit(proba[:300], y[:300])
-    >>> table = prior_by_batch(est, proba[300:], batch_size=100)
-    >>> table["n_rows"].tolist(), table.dtype.names[:3]
-    ([100, 100, 100], ('batch', 'n_rows', 'prior'))
-    """
-    estimator._check_fitted()
-    p = check_proba(proba, name="proba", ndim=2)
-    n, k = p.shape
-    w = check_sample_weight(sample_weight, n)
-    if (batches is None) == (batch_size is None):
-        raise ValueError("Give exactly one of `batches` (a label per row) and `batch_size`.")
-    if batch_size is not None:
-        if not (isinstance(batch_size, numbers.Integral) and batch_size >= 1):
-            raise ValueError(f"`batch_size` must be a positive integer; got {plain(batch_size)!r}.")
-        labels = np.arange(n) // int(batch_size)
-    else:
-        labels = np.asarray(batches)
-        if labels.ndim != 1 or labels.shape[0] != n:
-            raise ValueError(
-                f"`batches` must be 1-d with one label per row ({n}); got shape {labels.shape}."
-            )
-        if labels.dtype == object:
-            labels = labels.astype(str)
-    uniq, first, inverse = np.unique(labels, return_index=True, return_inverse=True)
-    order = np.argsort(first, kind="stable")
-    dtype = [
-        ("batch", uniq.dtype),
-        ("n_rows", np.int64),
-        ("prior", float, (k,)),
-        ("lower", float, (k,)),
-        ("upper", float, (k,)),
-        ("shift_statistic", float),
-        ("shift_pvalue", float),
-        ("converged", bool),
-    ]
-    table = np.zeros(len(uniq), dtype=dtype)
-    rng = check_random_state(estimator.random_state)
-    for row, b in enumerate(order):
-        rows = inverse.ravel() == b
-        res = estimator.estimate(p[rows], w[rows], random_state=rng.randint(2**31 - 1))
-        interval = res.interval
-        if interval is None:
-            interval = np.column_stack([res.prior, res.prior])
-        table[row] = (
-            uniq[b], int(rows.sum()), res.prior, interval[:, 0], interval[:, 1],
-            res.shift_statistic, res.shift_pvalue, res.converged,
-        )
-    return table

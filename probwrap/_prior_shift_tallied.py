@@ -1,0 +1,90 @@
+"""PriorShiftWrapper's intervals when some rows are tallied.
+
+A fit on Dask input keeps the labelled rows as a tally (bins of the log-odds with Poisson
+replicate counts), and ``adapt`` on Dask input tallies the unlabelled rows the same way. The
+bootstrap intervals then cannot redraw rows; they come from one Poisson bootstrap over the
+tallies' replicates and the in-memory rows alike (``tally_prior_interval`` of the scale layer).
+The wrapper decides when this applies; the arithmetic is here.
+"""
+
+from __future__ import annotations
+
+import copy
+from dataclasses import replace
+from typing import Any
+
+import numpy as np
+from sklearn.utils import check_random_state
+
+from ._validation import check_sample_weight
+from .shift import prior_by_batch
+from .shift._resample import _widen
+
+__all__ = ["tallied_adapt", "tallied_monitor"]
+
+
+def _tally_rows(tally: Any) -> float:
+    """Effective number of the rows behind a tally (its bins' weights are counts of rows).
+
+    Kish's count when the tally knows the sum of squared weights, otherwise its total weight
+    (exact for unit weights).
+    """
+    rows = tally.effective_rows
+    return float(rows) if np.isfinite(rows) else float(tally.total_weight)
+
+
+def tallied_adapt(
+    est: Any, source: Any, target: Any, proba: Any, sample_weight: Any, rs: Any, k: int
+) -> tuple:
+    """``adapt``'s estimate and interval when the labelled (``source``) or unlabelled
+    (``target``) rows are tallies; returns ``(PriorEstimate, interval)``."""
+    from .scale._entry import replicate_seed, tally_prior_interval
+
+    rows = None if target is None else _tally_rows(target)
+    res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
+                       interval=False)
+    w = check_sample_weight(sample_weight, np.asarray(proba).shape[0])
+    centre = res.ml_prior if res.ml_prior is not None else res.prior
+    if res.identified:
+        interval = tally_prior_interval(
+            est, source, np.asarray(proba, dtype=float), w, target, centre,
+            n_replicates=est.n_resamples, seed=replicate_seed(rs),
+        )
+        n_eff = rows if rows is not None else float(w.sum() ** 2 / np.dot(w, w))
+        interval = _widen(interval, res.prior, centre, n_eff, est.confidence_level)
+    else:
+        interval = np.column_stack([np.zeros(k), np.ones(k)])
+    dropped = getattr(est, "_last_dropped", 0)
+    res = replace(res, interval=interval, n_dropped=dropped)
+    return res, interval
+
+
+def tallied_monitor(
+    est: Any, source: Any, proba: Any, batches: Any, batch_size: Any, sample_weight: Any
+) -> np.ndarray:
+    """``monitor``'s table after a fit on Dask input: point estimates per batch, intervals from
+    a Poisson bootstrap over the labelled tally's replicates and the batch's rows."""
+    from .scale._entry import tally_prior_interval
+
+    point = copy.copy(est)
+    point.n_resamples = 0
+    table = prior_by_batch(
+        point, proba, batches, batch_size=batch_size, sample_weight=sample_weight
+    )
+    p = np.asarray(proba, dtype=float)
+    n = p.shape[0]
+    w = check_sample_weight(sample_weight, n)
+    if batch_size is not None:
+        labels = np.arange(n) // int(batch_size)
+    else:
+        labels = np.asarray(batches)
+        labels = labels.astype(str) if labels.dtype == object else labels
+    rng = check_random_state(est.random_state)
+    for i in range(table.shape[0]):
+        rows = labels == table["batch"][i]
+        iv = tally_prior_interval(
+            est, source, p[rows], w[rows], None, table["prior"][i],
+            n_replicates=est.n_resamples, seed=rng.randint(2**31 - 1),
+        )
+        table["lower"][i], table["upper"][i] = iv[:, 0], iv[:, 1]
+    return table

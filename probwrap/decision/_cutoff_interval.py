@@ -1,0 +1,155 @@
+"""How precisely held-out rows determine a cutoff: bootstrap and fold spread."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .._validation import check_same_length, plain
+from ._cutoff import _check_bounds, _pick_optimum, _prepare, _search_rows, check_capacity
+from ._cutoff_rows import _RowCosts, _SortedRows
+
+__all__ = ["CutoffInterval", "cutoff_interval"]
+
+
+@dataclass(frozen=True)
+class CutoffInterval:
+    """Uncertainty of a tuned cutoff.
+
+    Attributes
+    ----------
+    low, high : float
+        Percentile bootstrap interval of the cutoff (rows resampled with replacement and the
+        search repeated on each resample).
+    confidence_level : float
+        Coverage aimed at by ``(low, high)``.
+    bootstrap_cutoffs : ndarray of shape (n_resamples,)
+        The cutoff found on each resample.
+    fold_cutoffs : ndarray of shape (n_folds,)
+        The cutoff found on the held-out rows of each fold separately (empty for a frozen
+        estimator); their spread shows how much the cutoff moves between folds.
+    fold_low, fold_high : float
+        Smallest and largest of ``fold_cutoffs`` (NaN-free: equal to ``low`` / ``high`` when there
+        are no folds).
+    """
+
+    low: float
+    high: float
+    confidence_level: float
+    bootstrap_cutoffs: np.ndarray
+    fold_cutoffs: np.ndarray
+    fold_low: float
+    fold_high: float
+
+
+def cutoff_interval(
+    scores: Any,
+    y: Any,
+    costs: Any,
+    *,
+    sample_weight: Any = None,
+    fold: Any = None,
+    capacity: float | None = None,
+    score_bounds: tuple[float, float] | None = None,
+    n_resamples: int = 200,
+    confidence_level: float = 0.95,
+    random_state: Any = None,
+) -> CutoffInterval:
+    """How precisely the held-out rows determine the cutoff: bootstrap and fold spread.
+
+    The rows are sorted once; each bootstrap resample only re-weights them (a row drawn ``c``
+    times gets ``c`` times its weight) and repeats the cumulative sums, so a resample costs O(n).
+
+    Parameters
+    ----------
+    scores, y, costs, sample_weight, capacity, score_bounds
+        As for :func:`search_cutoff`.
+    fold : array-like of int of shape (n,), default=None
+        Fold of each row (negative values: no fold). The cutoff is searched on each fold alone.
+    n_resamples : int, default=200
+        Number of bootstrap resamples.
+    confidence_level : float, default=0.95
+        Coverage of the percentile interval.
+    random_state : int, RandomState instance or None, default=None
+        Seed of the resampling.
+
+    Returns
+    -------
+    CutoffInterval
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.decision import cutoff_interval
+    >>> rng = np.random.default_rng(0)
+    >>> p = rng.uniform(size=500)
+    >>> y = (rng.uniform(size=500) < p).astype(int)
+    >>> ci = cutoff_interval(p, y, {"fp": 1.0, "fn": 3.0}, score_bounds=(0, 1),
+    ...                      n_resamples=50, random_state=0)
+    >>> bool(ci.low < 0.25 < ci.high)
+    True
+    """
+    s, yi, w, matrix, _ = _prepare(scores, y, costs, sample_weight)
+    cap = check_capacity(capacity)
+    bounds = _check_bounds(score_bounds)
+    if int(n_resamples) < 1:
+        raise ValueError(f"`n_resamples` must be a positive integer; got {plain(n_resamples)!r}.")
+    if not 0.0 < float(confidence_level) < 1.0:
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {plain(confidence_level)!r}.")
+    from sklearn.utils import check_random_state
+
+    rng = check_random_state(random_state)
+    w1 = np.ones(s.shape[0]) if w is None else w
+    # Weights are frequencies: a row of weight zero is absent, so resamples draw from the rows
+    # of positive weight only (a resample of zero-weight rows alone would have no cost curve).
+    present = np.flatnonzero(w1 > 0)
+    n = present.shape[0]
+    rows = _SortedRows(s[present], bounds)
+    rc = _RowCosts(matrix if matrix.ndim == 2 else matrix[present], yi[present],
+                   None if w is None else w[present])
+    wp = w1[present]
+    d_sorted = ((rc.c0 - rc.c1) * wp)[rows.order]
+    c1w_sorted = (rc.c1 * wp)[rows.order]
+    w_sorted = wp[rows.order]
+    found = np.empty(int(n_resamples))
+    for b in range(int(n_resamples)):
+        # a row drawn c times gets c times its weight; counts are put in score order directly
+        counts = np.bincount(rng.randint(0, n, size=n), minlength=n).astype(float)
+        cs = counts[rows.order]
+        total, flagged, weight = rows.curve(
+            d_sorted * cs, float(np.dot(c1w_sorted, cs)), w_sorted * cs
+        )
+        admissible = (
+            np.ones(total.shape[0], dtype=bool)
+            if cap is None
+            else flagged / weight <= cap * (1 + 1e-12)
+        )
+        found[b] = _pick_optimum(total / weight, rows.lower, rows.upper, admissible)[1]
+    found = found[np.isfinite(found)]
+    alpha = (1.0 - float(confidence_level)) / 2.0
+    low, high = (float(v) for v in np.quantile(found, [alpha, 1.0 - alpha]))
+
+    fold_cutoffs = []
+    if fold is not None:
+        f = np.asarray(fold)
+        check_same_length(("scores", s), ("fold", f))
+        for k in np.unique(f[f >= 0]):
+            mask = f == k
+            if not np.any(w1[mask] > 0):
+                continue
+            sub_w = None if w is None else w[mask]
+            sub_matrix = matrix if matrix.ndim == 2 else matrix[mask]
+            res = _search_rows(s[mask], _RowCosts(sub_matrix, yi[mask], sub_w), cap, bounds)
+            fold_cutoffs.append(res.cutoff)
+    fold_arr = np.asarray(fold_cutoffs, dtype=float)
+    return CutoffInterval(
+        low=low,
+        high=high,
+        confidence_level=float(confidence_level),
+        bootstrap_cutoffs=found,
+        fold_cutoffs=fold_arr,
+        fold_low=float(fold_arr.min()) if fold_arr.size else low,
+        fold_high=float(fold_arr.max()) if fold_arr.size else high,
+    )
