@@ -18,6 +18,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ._common import DataError, clean, shown
 from ._tables import numeric_column
 
@@ -108,7 +109,7 @@ def late_label_line(hl: Any) -> str:
             "probability of still being observed")
 
 
-__all__ += ["late_label_line", "add_alarm_flags"]
+__all__ += ["late_label_line", "add_alarm_flags", "promise_summary"]
 
 
 # -- prevalence alarm -----------------------------------------------------------------------
@@ -180,3 +181,37 @@ def guarantee_args(args: argparse.Namespace) -> dict[str, Any] | None:
         )
     return {"requirement": args.guarantee, "target": args.guarantee_target,
             "confidence": args.guarantee_confidence, "method": args.guarantee_method}
+
+
+# -- the report verb's JSON summary of the three ----------------------------------------------
+def promise_summary(content, summary: dict) -> str:
+    """Guarantee, alarm and late labels in the JSON summary, and their words in the line."""
+    line = ""
+    g = content.guarantee
+    if g is not None:
+        summary["guarantee"] = {
+            "requirement": g.requirement, "target": g.target, "method": g.method,
+            "confidence": g.confidence, "cutoff": g.cutoff, "achieved": g.achieved,
+            "bound": g.bound, "p_value": g.p_value, "moved_the_cutoff": g.binding,
+            "unreachable": g.unreachable,
+        }
+        line += (f", guarantee unreachable ({g.promise})" if g.unreachable is not None else
+                 f", guaranteed cutoff {g.cutoff:.4f} ({g.promise}; bound {g.bound:.4f})")
+    a = getattr(content, "alarm", None)
+    if a is not None:
+        res = a.result
+        summary["alarm"] = {
+            "reference": float(res.reference), "decision_interval": float(res.decision_interval),
+            "alarms": [{"batch": plain(a.batches[i]), "direction":
+                        "up" if res.direction[j] > 0 else "down"}
+                       for j, i in enumerate(res.alarms)],
+            "first_alarm": None if a.first_batch is None else plain(a.first_batch),
+            "in_control_run_length": float(a.in_control_run_length),
+        }
+        line += (", no prevalence alarm" if a.first_batch is None else
+                 f", prevalence alarm after batch {a.first_batch}")
+    hl = getattr(content, "late_labels", None)
+    if hl is not None:
+        summary["late_labels"] = late_label_summary(hl)
+        line += f"; {int(hl.is_open.sum())} rows still open at horizon {hl.horizon:g}"
+    return line

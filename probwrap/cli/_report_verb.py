@@ -32,7 +32,7 @@ from ._promise_flags import (
     add_late_label_flags,
     guarantee_args,
     late_label_columns,
-    late_label_summary,
+    promise_summary,
     read_late_labels,
 )
 from ._tables import numeric_column, probability_column, read_labels, read_table
@@ -414,39 +414,6 @@ def _handler(args: argparse.Namespace) -> int:
                        shift_pvalue=float(content.shift_pvalue))
         line += (f", prevalence {content.source_prevalence:.4f} -> "
                  f"{content.target_prevalence:.4f} (shift p = {content.shift_pvalue:.3g})")
-    line += _promise_summary(content, summary)
+    line += promise_summary(content, summary)
     _print_summary(args, line, summary)
     return 0
-
-
-def _promise_summary(content, summary: dict) -> str:
-    """Guarantee, alarm and late labels in the JSON summary, and their words in the line."""
-    line = ""
-    g = content.guarantee
-    if g is not None:
-        summary["guarantee"] = {
-            "requirement": g.requirement, "target": g.target, "method": g.method,
-            "confidence": g.confidence, "cutoff": g.cutoff, "achieved": g.achieved,
-            "bound": g.bound, "p_value": g.p_value, "moved_the_cutoff": g.binding,
-            "unreachable": g.unreachable,
-        }
-        line += (f", guarantee unreachable ({g.promise})" if g.unreachable is not None else
-                 f", guaranteed cutoff {g.cutoff:.4f} ({g.promise}; bound {g.bound:.4f})")
-    a = getattr(content, "alarm", None)
-    if a is not None:
-        res = a.result
-        summary["alarm"] = {
-            "reference": float(res.reference), "decision_interval": float(res.decision_interval),
-            "alarms": [{"batch": plain(a.batches[i]), "direction":
-                        "up" if res.direction[j] > 0 else "down"}
-                       for j, i in enumerate(res.alarms)],
-            "first_alarm": None if a.first_batch is None else plain(a.first_batch),
-            "in_control_run_length": float(a.in_control_run_length),
-        }
-        line += (", no prevalence alarm" if a.first_batch is None else
-                 f", prevalence alarm after batch {a.first_batch}")
-    hl = getattr(content, "late_labels", None)
-    if hl is not None:
-        summary["late_labels"] = late_label_summary(hl)
-        line += f"; {int(hl.is_open.sum())} rows still open at horizon {hl.horizon:g}"
-    return line
