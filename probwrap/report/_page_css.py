@@ -31,6 +31,7 @@ th, td { border-bottom:1px solid var(--rule); padding:.25rem .6rem; text-align:r
 th:first-child, td:first-child { text-align:left; font-family:Georgia, serif; }
 thead th { border-bottom:2px solid var(--ink); }
 tr.pw-chosen td { background:#eaf4f1; font-weight:bold; }
+tr.pw-unreachable td { color:var(--warm); font-style:italic; }
 figure { margin:.8rem 0; }
 figure svg { max-width:100%; height:auto; display:block; background:#fff;
              border:1px solid var(--rule); }
