@@ -35,6 +35,7 @@ LAYERS = {
     "aggregated": 2,
     "_heldout": 3,
     "_calibration_wrapper": 3,
+    "_calibration_auto": 3,
     "_cost_policy": 3,
     "_cost_policy_summary": 3,
     "_cost_policy_rules": 3,
