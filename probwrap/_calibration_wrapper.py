@@ -9,65 +9,23 @@ from typing import Any
 import numpy as np
 from scipy.special import logsumexp
 from sklearn.base import clone
-from sklearn.model_selection import StratifiedKFold
-from sklearn.utils import check_random_state
 from sklearn.utils.metaestimators import available_if
 
+from ._calibration_auto import CALIBRATION_METHODS, _AutoChoice, _boundary_of
 from ._heldout import (
     HeldOutClassifierBase,
-    HeldOutPredictions,
     _is_dask,
     _multiclass_dask,
     check_fitted,
 )
 from ._validation import plain
 from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
-from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
 from .calibration._isotonic import IsotonicMap
 from .calibration._logodds import DEFAULT_CLIP
-from .calibration._platt import PlattMap
-from .calibration._temperature import TemperatureMap
-from .calibration._vector_scaling import MatrixScalingMap, VectorScalingMap
 from .calibration._venn_abers import VennAbersMap
 
 __all__ = ["CalibrationWrapper", "CALIBRATION_METHODS"]
-
-#: Method names accepted by ``CalibrationWrapper(method=...)`` and the maps they stand for.
-CALIBRATION_METHODS: dict[str, type[CalibrationMap]] = {
-    "temperature": TemperatureMap,
-    "platt": PlattMap,
-    "beta": BetaMap,
-    "binning": BinningMap,
-    "isotonic": IsotonicMap,
-    "venn_abers": VennAbersMap,
-    "vector_scaling": VectorScalingMap,
-    "matrix_scaling": MatrixScalingMap,
-}
-
-#: Candidates of ``method="auto"`` that compete only for multiclass models: on binary log-odds
-#: vector scaling is Platt scaling with a shrunken intercept.
-_AUTO_MULTICLASS_ONLY = ("vector_scaling",)
-
-#: Methods that ``method="auto"`` leaves out unless named in ``candidates``: matrix scaling has
-#: k^2 + k - 1 parameters and needs many rows per class.
-_AUTO_EXCLUDED_BY_DEFAULT = ("matrix_scaling",)
-
-#: ``method="auto"`` keeps Venn-Abers among its default candidates only while the number of
-#: held-out rows times the number of binary maps (1, or k one-vs-rest) stays below this.
-_VENN_ABERS_AUTO_MAX_ROWS = 1_000
-
-#: ``method="auto"`` scores its candidates on at most this many rows: above it, on a
-#: class-stratified sample of the rows (the chosen map is then fitted on all rows).
-_SELECTION_MAX_ROWS = 20_000
-
-#: ... and with its own folds, uses two instead of ``cv`` folds from this many rows times binary
-#: maps (1 for two classes, k one-vs-rest) on.
-_TWO_FOLD_CELLS = 20_000
-
-#: ``method="auto"`` stops scoring a candidate after the first fold when its loss there is more
-#: than this many paired standard errors above the best one's.
-_RACE_SE = 4.0
 
 #: Maps that use only the order of the scores: they get full-resolution scores.
 _ORDER_BASED = (IsotonicMap, BinningMap, VennAbersMap)
@@ -75,27 +33,13 @@ _ORDER_BASED = (IsotonicMap, BinningMap, VennAbersMap)
 #: Exact zero probabilities become this (the smallest positive float) before taking logs.
 _TINY = np.nextafter(0.0, 1.0)
 
-#: Probabilities are floored at this value when scoring candidate maps by log loss, so that a map
-#: that predicts an exact 0 for an event that happens is heavily penalised but stays finite.
-_LOG_LOSS_FLOOR = 1e-15
-
-
-def _boundary_of(cal: Any) -> str | None:
-    """Why a fitted map (or any map of a one-vs-rest list) sits at a boundary, or None."""
-    maps = cal if isinstance(cal, list) else [cal]
-    for k, m in enumerate(maps):
-        hit = getattr(m, "boundary_", None)
-        if hit is not None:
-            return hit if len(maps) == 1 else f"class {k}: {hit}"
-    return None
-
 
 def _uses_interval(self: CalibrationWrapper) -> bool:
     method = getattr(self, "method_", self.method)
     return method == "venn_abers" or isinstance(self.method, VennAbersMap)
 
 
-class CalibrationWrapper(HeldOutClassifierBase):
+class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
     """Calibrate any classifier's probabilities on held-out predictions.
 
     The wrapped estimator's held-out predictions (cross-fitted, or all rows when the estimator is
@@ -112,8 +56,10 @@ class CalibrationWrapper(HeldOutClassifierBase):
     method : str or CalibrationMap, default="auto"
         ``"platt"``, ``"isotonic"``, ``"beta"``, ``"temperature"``, ``"binning"``,
         ``"venn_abers"``, ``"vector_scaling"``, ``"matrix_scaling"`` (the last two multiclass
-        maps, see :class:`~probwrap.calibration.VectorScalingMap`), a map instance (cloned
-        before fitting), or ``"auto"``. ``"auto"`` scores
+        maps, see :class:`~probwrap.calibration.VectorScalingMap`), ``"identity"`` (the model's
+        own probabilities with the output floor of temperature scaling, see
+        :class:`~probwrap.calibration.IdentityMap`), a map instance (cloned before fitting), or
+        ``"auto"``. ``"auto"`` scores
         every candidate map by cross-validated log loss on the held-out predictions and keeps the
         simplest map whose loss is within one standard error (of the paired per-row difference)
         of the best one, so a richer map must win by more than its cross-validation noise. A
@@ -130,7 +76,9 @@ class CalibrationWrapper(HeldOutClassifierBase):
         Shuffling of the folds.
     candidates : sequence of str, default=None
         Maps that ``"auto"`` chooses from. Default: all methods except matrix scaling (which
-        needs many rows per class), with vector scaling for multiclass models only (on binary
+        needs many rows per class) and the identity (listed, it is scored only for
+        ``predict_proba`` output, and as the candidate with no parameters it wins every close
+        race of the one-standard-error rule), with vector scaling for multiclass models only (on binary
         log-odds it is Platt scaling); Venn–Abers is a
         candidate only while the held-out rows times the number of binary maps (1 for two
         classes, k one-vs-rest) stay below 1,000: it costs one to two orders of magnitude more
@@ -327,16 +275,6 @@ class CalibrationWrapper(HeldOutClassifierBase):
         ):
             raise ValueError(f"`clip` must be None or a float in (0, 0.5); got {plain(self.clip)!r}.")
 
-    def _candidate_names(self) -> list[str]:
-        names = list(CALIBRATION_METHODS) if self.candidates is None else list(self.candidates)
-        unknown = [c for c in names if c not in CALIBRATION_METHODS]
-        if unknown or not names:
-            raise ValueError(
-                f"`candidates` must be a non-empty list drawn from {tuple(CALIBRATION_METHODS)}; "
-                f"got {plain(self.candidates)!r}."
-            )
-        return names
-
     # -- scores ------------------------------------------------------------------------------
     def _choose_clip(self, values: np.ndarray, w: np.ndarray) -> float:
         """``clip`` as given, or half the smallest non-zero held-out probability.
@@ -457,254 +395,6 @@ class CalibrationWrapper(HeldOutClassifierBase):
         uniform = np.full_like(q, 1.0 / q.shape[1])
         with np.errstate(invalid="ignore", divide="ignore"):
             return np.where(total > 0, q / np.where(total > 0, total, 1.0), uniform)
-
-    # -- automatic choice ----------------------------------------------------------------------
-    def _selection_rows(self, ho: HeldOutPredictions) -> np.ndarray | None:
-        """Rows that score the candidates: all of them, or a class-stratified random sample of
-        ``_SELECTION_MAX_ROWS`` rows when there are more (and the folds are not given as indices).
-        The chosen map is always fitted on all rows."""
-        y = ho.y_index
-        n = y.shape[0]
-        own_folds = ho.n_folds >= 2 or isinstance(
-            self.cv if self.cv is not None else 5, numbers.Integral
-        )
-        if n <= _SELECTION_MAX_ROWS or not own_folds:
-            return None
-        rng = check_random_state(self.random_state)
-        frac = _SELECTION_MAX_ROWS / n
-        keep = []
-        for k in np.unique(y):
-            rows = np.flatnonzero(y == k)
-            take = min(rows.shape[0], max(int(round(frac * rows.shape[0])), 50))
-            keep.append(rng.choice(rows, take, replace=False))
-        return np.sort(np.concatenate(keep))
-
-    def _selection_folds(self, ho: HeldOutPredictions, rows: np.ndarray | None) -> np.ndarray:
-        if ho.n_folds >= 2:
-            return ho.fold if rows is None else ho.fold[rows]
-        y = ho.y_index if rows is None else ho.y_index[rows]
-        cv = self.cv if self.cv is not None else 5
-        if isinstance(cv, numbers.Integral):
-            counts = np.bincount(y)
-            n_splits = int(min(cv, max(2, counts[counts > 0].min())))
-            n_maps = 1 if len(self.classes_) == 2 else len(self.classes_)
-            if y.shape[0] * n_maps >= _TWO_FOLD_CELLS:
-                # each half holds > 10,000 rows (times maps): two folds estimate the losses
-                # precisely enough, at two fifths of the cost of five
-                n_splits = 2
-            splitter = StratifiedKFold(n_splits, shuffle=True, random_state=self.random_state)
-        else:
-            splitter = self._make_splitter(y)
-        fold = np.full(y.shape[0], -1)
-        with warnings.catch_warnings():
-            warnings.filterwarnings("ignore", message="The least populated class")
-            for i, (_, test) in enumerate(splitter.split(np.zeros((y.shape[0], 1)), y)):
-                fold[test] = i
-        if np.any(fold < 0):
-            raise ValueError("`cv` must partition the rows to score the candidate maps.")
-        return fold
-
-    def _auto_names(self, n_rows: int, n_maps: int = 1) -> list[str]:
-        """The candidates ``"auto"`` scores, in the order given (see ``candidates``)."""
-        names = self._candidate_names()
-        if self.candidates is None:
-            names = [n for n in names if n not in _AUTO_EXCLUDED_BY_DEFAULT]
-            if n_maps == 1:  # binary
-                names = [n for n in names if n not in _AUTO_MULTICLASS_ONLY]
-        if self.candidates is None and n_rows * n_maps >= _VENN_ABERS_AUTO_MAX_ROWS:
-            # Venn-Abers costs one to two orders of magnitude more to cross-validate than the
-            # other maps (one hull-bridging search per insertion point and label, per class
-            # one-vs-rest), while beyond a few hundred rows per class its merged probability
-            # agrees with the smoothed isotonic fit to within about the 1/n of the smoothing.
-            # By default it is a candidate only on small sets (pass `candidates` to include it).
-            names = [n for n in names if n != "venn_abers"]
-        return names
-
-    def _simplicity_order(self, names: list[str]) -> list[str]:
-        """Candidates from the fewest to the most parameters; on ties the order given, except
-        that Venn-Abers comes before isotonic regression (it is only a default candidate on
-        small sets, where its interval regularises more than the smoothed targets do)."""
-
-        def key(nm: str) -> tuple[float, int, int]:
-            return (CALIBRATION_METHODS[nm]().complexity, nm != "venn_abers", names.index(nm))
-
-        return sorted(names, key=key)
-
-    def _fallback_name(self, names: list[str], binary: bool) -> str:
-        """The most regularised candidate: Platt scaling with smoothed targets (binary) or
-        temperature scaling with its weak prior (multiclass) when listed, else the candidate
-        with the fewest parameters."""
-        for preferred in (("platt", "temperature") if binary else ("temperature", "platt")):
-            if preferred in names:
-                return preferred
-        return min(names, key=lambda nm: (CALIBRATION_METHODS[nm]().complexity, names.index(nm)))
-
-    def _score_fold(self, name, scores, ovr, y, w, f, test, state) -> str | None:
-        """Fit one candidate on the rows outside fold ``f`` and score the rows inside it.
-
-        Fills ``state["per_row"]`` (log loss per row); warnings raised by the fit are collected
-        in ``state["seen"]`` (not shown one by one) and a fit that reaches a boundary of its
-        parameter space is recorded in ``state["boundary"]``. Returns the error text when the
-        fit fails, else None.
-        """
-        train = ~test
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always")
-            try:
-                cal = self._fit_map(
-                    CALIBRATION_METHODS[name](),
-                    scores[train],
-                    y[train],
-                    w[train],
-                    None if ovr is None else ovr[train],
-                )
-            except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
-                return f"failed in fold {f}: {exc}"
-        for item in caught:
-            if issubclass(item.category, WeightScaleWarning):
-                continue  # the wrapper has already put the weights on the count scale
-            text = str(item.message)
-            if text not in state["seen"]:
-                state["seen"].append(text)
-        if state["boundary"] is None:
-            hit = _boundary_of(cal)
-            if hit is not None:
-                state["boundary"] = f"fold {f}: {hit}"
-        q = self._apply_map(cal, scores[test], None if ovr is None else ovr[test])
-        state["per_row"][test] = -np.log(
-            np.maximum(q[np.arange(q.shape[0]), y[test]], _LOG_LOSS_FLOOR)
-        )
-        return None
-
-    def _fold_losses(self, names, scores, ovr, y, w, fold_masks, notes):
-        """Out-of-fold log loss per row of every candidate that could be scored.
-
-        Candidates are scored fold by fold. After the first fold, a candidate whose loss on
-        that fold's rows is more than :data:`_RACE_SE` paired standard errors above the best
-        eligible candidate's is left out of the remaining folds (it cannot plausibly come back
-        within one standard error); ``notes`` says so. Returns ``{name: (per_row, boundary)}``.
-        """
-        states = {
-            nm: {"per_row": np.empty(y.shape[0]), "boundary": None, "seen": []} for nm in names
-        }
-        active = list(names)
-        for i, (f, test) in enumerate(fold_masks):
-            for name in list(active):
-                error = self._score_fold(name, scores, ovr, y, w, f, test, states[name])
-                if error is not None:
-                    notes[name] = error
-                    active.remove(name)
-                    del states[name]
-            if i == 0 and len(fold_masks) > 1 and len(active) > 1:
-                wt = w[test]
-                fine = [nm for nm in active if states[nm]["boundary"] is None]
-                if not fine or wt.sum() <= 0:
-                    continue
-                for nm in [a for a in active if a not in fine]:
-                    # not eligible whatever the other folds give: not scored further
-                    notes[nm] = f"not eligible: the fit reached a boundary ({states[nm]['boundary']})"
-                    active.remove(nm)
-                    del states[nm]
-                wn = wt / wt.sum()
-                n_eff = float(wt.sum() ** 2 / (wt @ wt))
-                loss = {nm: states[nm]["per_row"][test] for nm in active}
-                best = min(fine, key=lambda nm: float(wn @ loss[nm]))
-                for nm in [a for a in active if a != best]:
-                    d = loss[nm] - loss[best]
-                    dbar = float(wn @ d)
-                    se = float(np.sqrt(max(float(wn @ (d - dbar) ** 2), 0.0) / max(n_eff - 1.0, 1.0)))
-                    if dbar > _RACE_SE * se and dbar > 0:
-                        notes[nm] = (
-                            f"left out after fold {f}: log loss {dbar:.4g} above {plain(best)!r} there, "
-                            f"{dbar / se if se > 0 else np.inf:.1f} standard errors"
-                        )
-                        active.remove(nm)
-                        del states[nm]
-        out = {}
-        for name in active:
-            st = states[name]
-            if st["boundary"] is not None:
-                notes[name] = f"not eligible: the fit reached a boundary ({st['boundary']})"
-            elif st["seen"]:
-                notes[name] = "warnings in the fold fits: " + " | ".join(st["seen"])
-            out[name] = (st["per_row"], st["boundary"])
-        return out
-
-    def _choose(self, ho: HeldOutPredictions, scores: np.ndarray, w: np.ndarray):
-        """Pick a map by cross-validated log loss (one-standard-error rule).
-
-        Returns ``(name, scores, notes)``: ``scores[name] = (loss, se)`` for every candidate
-        scored, ``notes[name]`` the reason a candidate was not eligible or could not be scored.
-        """
-        y = ho.y_index
-        binary = scores.ndim == 1
-        names = self._auto_names(y.shape[0], 1 if binary else scores.shape[1])
-        notes: dict[str, str] = {}
-        present = np.bincount(y[w > 0], minlength=len(self.classes_))
-        present = present[present > 0]
-        if present.shape[0] < 2 or present.min() < 2:
-            fallback = self._fallback_name(names, binary)
-            reason = (
-                f"a class has only {int(present.min())} held-out row(s), too few to score "
-                f"candidate maps by cross-validation; using {plain(fallback)!r}, "
-                "the most regularised map"
-            )
-            warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
-            notes[fallback] = "chosen without cross-validation: " + reason
-            return fallback, {}, notes
-        rows = self._selection_rows(ho)
-        if rows is not None:
-            scores, y, w = scores[rows], y[rows], w[rows]
-            notes["auto"] = (
-                f"candidates scored on a class-stratified sample of {rows.shape[0]} of "
-                f"{ho.y_index.shape[0]} rows; the chosen map is fitted on all rows"
-            )
-        fold = self._selection_folds(ho, rows)
-        ovr = None
-        if binary:
-            # Shared sorted rows: every fold's part of the rows is then already in score order,
-            # so the order-based maps' sorts are nearly free. Losses are per row, so the order
-            # of the rows does not matter for the choice.
-            order = np.argsort(scores, kind="stable")
-            scores, y, w, fold = scores[order], y[order], w[order], fold[order]
-        else:
-            ovr = self._one_vs_rest_scores(scores)  # once, not once per fold and candidate
-        fold_masks = [(f, fold == f) for f in np.unique(fold)]
-        losses: dict[str, np.ndarray] = {}
-        eligible: list[str] = []
-        for name, (per_row, boundary) in self._fold_losses(
-            names, scores, ovr, y, w, fold_masks, notes
-        ).items():
-            losses[name] = per_row
-            if boundary is None:
-                eligible.append(name)
-        wn = w / w.sum()
-        # Kish's effective sample size: the standard error does not depend on the weights' scale
-        n_eff = float(w.sum() ** 2 / (w @ w))
-        means = {name: float(wn @ loss) for name, loss in losses.items()}
-        scores_out: dict[str, tuple[float, float]] = {}
-        if eligible:
-            best = min(eligible, key=means.get)
-            for name, loss in losses.items():
-                d = loss - losses[best]
-                dbar = float(wn @ d)
-                var = float(wn @ (d - dbar) ** 2) * n_eff / max(n_eff - 1.0, 1.0)
-                scores_out[name] = (means[name], float(np.sqrt(var / n_eff)))
-        else:
-            scores_out = {name: (means[name], float("nan")) for name in losses}
-        for name in self._simplicity_order(eligible):
-            loss, se = scores_out[name]
-            if loss - means[best] <= se:
-                return name, scores_out, notes
-        fallback = self._fallback_name(names, binary)
-        reason = (
-            "no candidate map could be scored and used: "
-            + "; ".join(f"{nm}: {txt}" for nm, txt in notes.items())
-            + f"; using {plain(fallback)!r}, the most regularised map"
-        )
-        warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
-        notes.setdefault(fallback, "chosen as the fallback: no candidate was eligible")
-        return fallback, scores_out, notes
 
     # -- prediction ----------------------------------------------------------------------------
     def _calibrated(self, X: Any) -> np.ndarray:

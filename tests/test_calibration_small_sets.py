@@ -299,7 +299,7 @@ def test_auto_stops_scoring_a_hopeless_candidate_after_the_first_fold():
 
 
 def test_auto_scores_a_sample_of_many_rows_and_fits_the_choice_on_all(monkeypatch):
-    import probwrap._calibration_wrapper as cw
+    import probwrap._calibration_auto as cw
 
     monkeypatch.setattr(cw, "_SELECTION_MAX_ROWS", 500)
     table, y = _logistic_rows(2000, slope=2.0)

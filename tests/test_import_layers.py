@@ -35,8 +35,10 @@ LAYERS = {
     "aggregated": 2,
     "_heldout": 3,
     "_calibration_wrapper": 3,
+    "_calibration_auto": 3,
     "_cost_policy": 3,
     "_cost_policy_summary": 3,
+    "_cost_policy_rules": 3,
     "_prior_shift": 3,
     "_prior_shift_tallied": 3,
     "__init__": 3,  # the package's top level: the wrappers' public face

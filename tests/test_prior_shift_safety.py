@@ -252,18 +252,21 @@ def test_weight_scale_changes_nothing():
             res = est.fit(p_src, y_src, ws * cs).estimate(p_new, wt * ct)
             out.append((interval, res))
     for interval in ("score", "bca"):
-        ref = next(r for i, r in out if i == interval)
-        for i, r in out:
-            if i != interval:
-                continue
-            # the bias-corrected calibration before the estimate is fitted by L-BFGS-B (gtol
-            # 1e-10): weights of another scale round differently and stop the optimiser at points
-            # ~1e-9 apart (observed 1.03e-9 with NumPy 1.26 / SciPy 1.12), hence atol 1e-8; without
-            # the effective-size rule the estimates differ by orders of magnitude more
-            np.testing.assert_allclose(r.prior, ref.prior, rtol=0, atol=1e-8)
-            np.testing.assert_allclose(r.interval, ref.interval, rtol=1e-7, atol=1e-10)
-            # same optimiser stopping point as above (observed relative gap 2e-9)
-            assert r.shift_pvalue == pytest.approx(ref.shift_pvalue, rel=1e-6)
+        runs = [r for i, r in out if i == interval]
+        # scaled by 1e-3 or to sum 1, the weights cannot be row frequencies and count as Kish's
+        # effective size either way: identical fits. The optimiser stops at points ~1e-9 apart
+        # when weights of another scale round differently (observed 1.03e-9 with NumPy 1.26 /
+        # SciPy 1.12), hence atol 1e-8; without the effective-size rule the estimates differ by
+        # orders of magnitude more.
+        ref, r = runs[1], runs[2]
+        np.testing.assert_allclose(r.prior, ref.prior, rtol=0, atol=1e-8)
+        np.testing.assert_allclose(r.interval, ref.interval, rtol=1e-7, atol=1e-10)
+        assert r.shift_pvalue == pytest.approx(ref.shift_pvalue, rel=1e-6)
+        # as given, the weights sum to ~1,280 over 800 rows: row frequencies, 1,280 rows for the
+        # calibration's weak prior (half a row) instead of Kish's ~650. That moves the prior's
+        # strength by a fraction of a row of the fit: the estimate by ~1e-5 (observed 1.1e-5).
+        np.testing.assert_allclose(runs[0].prior, ref.prior, rtol=0, atol=1e-4)
+        np.testing.assert_allclose(runs[0].interval, ref.interval, rtol=0, atol=1e-3)
 
 
 def test_weight_scale_changes_nothing_in_the_wrapper(weak_model):
@@ -565,3 +568,27 @@ def test_estimator_test_is_the_stratified_public_score_test():
     plain = shift_score_test(cal_t, est.source_prior_, source_proba=cal_s)
     assert res.shift_statistic == pytest.approx(strat.statistic, rel=1e-10)
     assert strat.statistic > plain.statistic
+
+
+def test_forest_with_exact_zero_one_on_bundled_wine_stays_inside():
+    # scikit-learn's bundled wine data, a forest that outputs exact 0/1 and 60 held-out rows the
+    # calibration separates: the plain bias-corrected fit made 96 % of the posteriors exactly 0
+    # or 1; with the weak prior on the scale and the floor none is, and the test log loss is no
+    # worse than the forest's own.
+    from sklearn.datasets import load_wine
+    from sklearn.ensemble import RandomForestClassifier
+    from sklearn.frozen import FrozenEstimator
+
+    X, y = load_wine(return_X_y=True)
+    idx = np.random.default_rng(0).permutation(len(y))
+    fit, held, test = idx[:60], idx[60:120], idx[120:]
+    forest = RandomForestClassifier(random_state=0).fit(X[fit], y[fit])
+    assert np.any(forest.predict_proba(X[test]) == 0.0)
+    model = PriorShiftWrapper(FrozenEstimator(forest), random_state=0, n_resamples=20)
+    model.fit(X[held], y[held])
+    p = model.predict_proba(X[test])
+    assert np.all((p > 0) & (p < 1))
+    base = np.clip(forest.predict_proba(X[test]), 1e-15, 1)
+    ll = -np.mean(np.log(p[np.arange(len(test)), y[test]]))
+    ll_base = -np.mean(np.log(base[np.arange(len(test)), y[test]]))
+    assert ll <= ll_base

@@ -295,7 +295,7 @@ def test_bcts_binary_matches_statsmodels_logistic_glm():
     rng = np.random.default_rng(10)
     proba, y, s = _miscalibrated_binary(3000, rng)
     glm = sm.GLM(y, sm.add_constant(s), family=sm.families.Binomial()).fit()
-    cal = BiasCorrectedScaling("temperature").fit(proba, y)
+    cal = BiasCorrectedScaling("temperature", shrinkage=0).fit(proba, y)  # the plain MLE
     np.testing.assert_allclose(cal.predict(proba)[:, 1], glm.predict(sm.add_constant(s)), atol=1e-6)
     assert cal.scale_[0] == pytest.approx(glm.params[1], abs=1e-5)
 
@@ -310,7 +310,7 @@ def test_vector_scaling_binary_matches_statsmodels_logistic_glm():
     design = np.column_stack([np.ones(len(y)), z[:, 1], z[:, 0]])
     glm = sm.GLM(y, design, family=sm.families.Binomial()).fit()
     assert glm.params[1] > 0 and glm.params[2] < 0  # inside the non-negativity bounds
-    cal = BiasCorrectedScaling("vector").fit(proba, y)
+    cal = BiasCorrectedScaling("vector", shrinkage=0).fit(proba, y)  # the plain MLE
     np.testing.assert_allclose(cal.predict(proba)[:, 1], glm.predict(design), atol=1e-5)
 
 
@@ -328,7 +328,50 @@ def test_bcts_multiclass_matches_scipy_minimiser_and_bias_property():
         return -logp[np.arange(len(y)), y].mean()
 
     ref = minimize(negll, np.r_[1.0, 0.0, 0.0], method="BFGS", options={"gtol": 1e-9}).x
-    cal = BiasCorrectedScaling().fit(np.exp(z), y)
+    cal = BiasCorrectedScaling(shrinkage=0).fit(np.exp(z), y)  # the plain MLE
     assert cal.scale_[0] == pytest.approx(ref[0], abs=1e-4)
     np.testing.assert_allclose(cal.bias_[1:], ref[1:], atol=1e-4)
     np.testing.assert_allclose(cal.predict(np.exp(z)).mean(0), np.bincount(y) / len(y), atol=1e-7)
+
+
+def test_bcts_prior_matches_scipy_minimiser_keeps_bias_property():
+    # The default fit adds the weak gamma prior 0.5 * (a - log a - 1) (in rows) on the scale.
+    # Reference: SciPy's BFGS on that penalised log-likelihood written out here; the biases'
+    # score equations are untouched, so the mean calibrated posterior still equals the class
+    # frequencies (Alexandari et al. 2020) up to the output floor.
+    from scipy.special import log_softmax
+
+    rng = np.random.default_rng(13)
+    x, y = gaussian_rows(150, [0.5, 0.3, 0.2], rng)
+    z = np.log(exact_posterior(2.0 * x, [1 / 3] * 3))
+    n = len(y)
+
+    def objective(theta):
+        if theta[0] <= 0:
+            return np.inf
+        logp = log_softmax(z * theta[0] + np.r_[0.0, theta[1:]], axis=1)
+        return -logp[np.arange(n), y].sum() + 0.5 * (theta[0] - np.log(theta[0]) - 1.0)
+
+    ref = minimize(objective, np.r_[1.0, 0.0, 0.0], method="Nelder-Mead",
+                   options={"xatol": 1e-10, "fatol": 1e-12, "maxiter": 20000}).x
+    cal = BiasCorrectedScaling().fit(np.exp(z), y)
+    assert cal.scale_[0] == pytest.approx(ref[0], abs=1e-5)
+    np.testing.assert_allclose(cal.bias_[1:], ref[1:], atol=1e-5)
+    assert cal.floor_ == pytest.approx(1 / (2 * (n + 1) * 2))  # Krichevsky-Trofimov
+    np.testing.assert_allclose(cal.predict(np.exp(z)).mean(0), np.bincount(y) / n,
+                               atol=3 * cal.floor_)
+
+
+def test_bcts_separated_classes_stay_inside_zero_one():
+    # separated held-out scores: the plain MLE scale runs off; the prior keeps it finite and the
+    # floor keeps every posterior near at least 1 / (2 (N + 1) (k - 1))
+    rng = np.random.default_rng(14)
+    y = np.repeat([0, 1, 2], 15)
+    z = rng.normal(0, 0.3, (45, 3)) + 4.0 * np.eye(3)[y]
+    proba = np.exp(z) / np.exp(z).sum(1, keepdims=True)
+    cal = BiasCorrectedScaling().fit(proba, y)
+    out = cal.predict(proba)
+    assert np.all(np.isfinite(cal.scale_)) and cal.scale_[0] < 50
+    # floored, then renormalised: at least floor / (1 + (k - 1) floor)
+    assert out.min() >= cal.floor_ / (1 + 2 * cal.floor_) * (1 - 1e-9) and out.max() < 1.0
+    assert cal.floor_ == pytest.approx(1 / (2 * 46 * 2))

@@ -158,6 +158,37 @@ def test_wrappers_fit_from_spark_agree_with_in_memory(spark, model):
     assert abs(lo - lo_l) < 2e-3 and abs(hi - hi_l) < 2e-3
 
 
+def test_weighted_rows_tally_bootstrap_replicates_on_the_executors(spark, model):
+    df = _data(20_000, seed=9)
+    w = np.random.default_rng(9).uniform(0.5, 2.0, size=20_000)
+    frame = _frame(spark, df.assign(w=w), 2)
+    X, y = df[COLS], df["damaged"].to_numpy()
+    # weighted rows: every row's own Poisson draws are tallied with it, so the interval of the
+    # tuned cutoff comes from replicate tallies built where the rows live
+    policy = CostPolicyWrapper(model, costs=COSTS, strategy="tuned", n_resamples=40,
+                               random_state=0).fit(frame, "damaged", sample_weight="w")
+    assert policy.tally_.n_replicates == 40
+    np.testing.assert_allclose(policy.tally_.label_weight,
+                               [w[y == 0].sum(), w[y == 1].sum()], rtol=1e-12)
+    iv = policy.cutoff_interval_
+    assert iv.bootstrap_cutoffs.shape == (40,) and np.unique(iv.bootstrap_cutoffs).shape[0] > 1
+    assert iv.low <= policy.cutoff_ <= iv.high
+    local = CostPolicyWrapper(model, costs=COSTS, strategy="tuned").fit(X, y, sample_weight=w)
+    realised = {}
+    for name, fitted in (("spark", policy), ("memory", local)):
+        act = fitted.predict(X)
+        realised[name] = np.dot(w, np.where(y == 1, COSTS["fn"] * (act == 0),
+                                            COSTS["fp"] * (act == 1))) / w.sum()
+    assert realised["spark"] <= realised["memory"] * 1.001
+    # BBSE from the tallies: within 2e-3 of BBSE on every row (weighted labelled rows)
+    shift = PriorShiftWrapper(model, method="bbse").fit(frame, "damaged", sample_weight="w")
+    shift_local = PriorShiftWrapper(model, method="bbse").fit(X, y, sample_weight=w)
+    winter = _data(20_000, seed=10, shift=0.4)[COLS]
+    shift.adapt(_frame(spark, winter))
+    shift_local.adapt(winter)
+    assert abs(shift.target_prior_[1] - shift_local.target_prior_[1]) < 2e-3
+
+
 def test_add_predictions_and_monitor_by_batch_column(spark, model):
     df = _data(30_000, seed=6)
     shift = PriorShiftWrapper(model, n_resamples=30, random_state=0).fit(df[COLS], df["damaged"])

@@ -3,6 +3,7 @@
 from ._base import NONPARAMETRIC, CalibrationMap, WeightScaleWarning
 from ._beta import BetaMap
 from ._binning import BinningMap
+from ._identity import IdentityMap
 from ._isotonic import IsotonicMap
 from ._logodds import DEFAULT_CLIP, log_odds_to_proba, proba_to_log_odds, proba_to_log_proba
 from ._multicalibration import MulticalibrationMap
@@ -17,6 +18,7 @@ __all__ = [
     "BinningMap",
     "CalibrationMap",
     "DEFAULT_CLIP",
+    "IdentityMap",
     "IsotonicMap",
     "MAP_SCORE_SCALES",
     "MatrixScalingMap",

@@ -28,8 +28,8 @@ __all__ = [
 def add_predictions(model, frame, *, prefix: str = ""):
     """Add a fitted classifier's probability and action columns to a Spark DataFrame.
 
-    See :func:`probwrap.scale._spark.add_predictions` for the columns; the model is broadcast
-    to the executors once and one pandas UDF scores the rows where they live.
+    The model is broadcast to the executors once, and one pandas UDF scores the rows where they
+    live, batch by batch; nothing is computed until Spark evaluates the returned frame.
 
     Parameters
     ----------

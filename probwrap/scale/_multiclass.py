@@ -71,7 +71,8 @@ def _target_block(estimator, calibrator, Xb, wb):
 # -- source side ------------------------------------------------------------------------------
 def _counts(block, k):
     _, _, y, w = block
-    return np.bincount(y, weights=w, minlength=k), float(np.dot(w, w))
+    return (np.bincount(y, weights=w, minlength=k), float(np.dot(w, w)),
+            float(np.count_nonzero(w)))
 
 
 def _scaling_terms(block, theta, n_scale, k, total):
@@ -133,7 +134,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     estimator, whose ``n_resamples`` is 0 (no bootstrap for multiclass Dask input).
     """
     from ..shift import PriorEstimator
-    from ..shift._calibration import BiasCorrectedScaling, _newton
+    from ..shift._calibration import BiasCorrectedScaling, _floor, _newton, scale_penalty
 
     dask, _ = _import_dask()
     estimator, classes = _frozen_multiclass(owner, y)
@@ -146,7 +147,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
         dask, [make(estimator, classes, b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
     )
     try:
-        class_weight, squared_weight = _reduce(dask, _counts, parts, k)
+        class_weight, squared_weight, positive_rows = _reduce(dask, _counts, parts, k)
         total = float(class_weight.sum())
         if total <= 0:
             raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
@@ -168,6 +169,12 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             kind = "temperature" if owner.calibration == "bcts" else "vector"
             n_scale = 1 if kind == "temperature" else k
             cache: dict = {}
+            # the weak prior on the scales, as in memory: worth shrinkage rows, the weights read
+            # as row frequencies unless they sum to fewer rows than there are (then Kish's
+            # effective size; probwrap.calibration._base.count_weights)
+            shrinkage = BiasCorrectedScaling(kind=kind).shrinkage
+            n_rows = total if total >= positive_rows else total**2 / squared_weight
+            lam = shrinkage / n_rows
 
             def terms(theta):
                 key = theta.tobytes()
@@ -178,10 +185,11 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
 
             def loss_grad(theta):
                 loss, grad, _ = terms(theta)
-                return float(loss[0]), grad
+                pen, pen_grad, _ = scale_penalty(theta, n_scale, lam)
+                return float(loss[0]) + pen, grad + pen_grad
 
             def hess(theta):
-                return terms(theta)[2]
+                return terms(theta)[2] + scale_penalty(theta, n_scale, lam)[2]
 
             theta0 = np.concatenate([np.ones(n_scale), np.zeros(k - 1)])
             theta, converged = _newton(loss_grad, hess, theta0, n_scale)
@@ -190,6 +198,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             cal.bias_ = np.concatenate([[0.0], theta[n_scale:]])
             cal.n_classes_ = k
             cal.converged_ = bool(converged)
+            cal.floor_ = _floor(n_rows, k)
         hard, soft = _reduce(dask, _confusions, parts, cal, k)
         su, suu, sw, sww = _reduce(dask, _class_score_sums, parts, cal, class_weight / total)
     finally:

@@ -15,10 +15,47 @@ __all__ = ["BiasCorrectedScaling"]
 _KINDS = ("temperature", "vector")
 
 
+def _check_shrinkage(value: Any) -> float:
+    ok = isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)
+    if not ok or not np.isfinite(value) or value < 0:
+        raise ValueError(f"`shrinkage` must be a finite number >= 0; got {plain(value)!r}.")
+    return float(value)
+
+
+def scale_penalty(theta: np.ndarray, n_scale: int, lam: float):
+    """Penalty of the weak gamma prior on the scales, with its gradient and Hessian.
+
+    ``lam * sum_j (a_j - log a_j - 1)``: the negative log-density of a gamma prior with its mode
+    at ``a = 1`` (the model's own log-probabilities, unchanged) worth ``lam`` of the (weighted
+    mean) loss per scale. Convex, zero at 1, unbounded toward 0 and infinity, so the penalised
+    loss keeps one finite minimum even when the held-out classes are separated. It involves the
+    scales only, so the biases' score equations — the mean calibrated posterior equals the class
+    frequency, which EM needs — are unchanged.
+    """
+    m = theta.shape[0]
+    grad = np.zeros(m)
+    hess = np.zeros((m, m))
+    if lam <= 0.0:
+        return 0.0, grad, hess
+    a = theta[:n_scale]
+    with np.errstate(divide="ignore"):
+        loss = float(lam * np.sum(a - np.log(a) - 1.0)) if np.all(a > 0) else np.inf
+    safe = np.maximum(a, np.finfo(float).tiny)
+    grad[:n_scale] = lam * (1.0 - 1.0 / safe)
+    hess[np.arange(n_scale), np.arange(n_scale)] = lam / safe**2
+    return loss, grad, hess
+
+
 def _log_softmax(u: np.ndarray, axis: int = 1) -> np.ndarray:
     """Row-wise log-softmax of a 2-d array (numerically stable)."""
     shifted = u - u.max(axis=axis, keepdims=True)
     return shifted - np.log(np.exp(shifted).sum(axis=axis, keepdims=True))
+
+
+def _floor(n_rows: float, k: int) -> float:
+    """Krichevsky–Trofimov output floor ``1 / (2 (N + 1) (k - 1))`` for ``N`` rows."""
+    with np.errstate(over="ignore"):
+        return float(1.0 / (2.0 * (n_rows + 1.0) * (k - 1)))
 
 
 def _hessian(z: np.ndarray, w: np.ndarray, n_scale: int):
@@ -89,10 +126,22 @@ class BiasCorrectedScaling:
     equation of each bias term makes the weighted mean of the calibrated held-out posteriors
     equal the weighted class frequencies, the source prior EM divides by.
 
+    On small or separated held-out sets the plain maximum-likelihood scale grows without bound
+    and the posteriors become exactly 0 and 1. A weak gamma prior on each scale (mode 1, the
+    model's own probabilities; worth ``shrinkage`` rows) keeps one finite optimum, and the
+    outputs are kept at least ``floor_ = 1 / (2 (N + 1) (k - 1))`` (the Krichevsky–Trofimov
+    add-one-half estimate for ``N`` effective rows, as for :class:`probwrap.calibration.TemperatureMap`).
+    The prior touches the scales only, so the bias score equations above still hold.
+
     Parameters
     ----------
     kind : {"temperature", "vector"}, default="temperature"
         One shared scale, or one scale per class.
+    shrinkage : float, default=0.5
+        Weight of the prior on each scale, in rows. Weights are row frequencies (a row of weight
+        2 counts twice); weights summing to fewer than the number of rows cannot be
+        frequencies and count as Kish's effective size ``(sum w)**2 / sum w**2``. ``0`` gives
+        the plain maximum-likelihood fit without an output floor.
 
     Attributes
     ----------
@@ -100,6 +149,8 @@ class BiasCorrectedScaling:
         Fitted scales (all equal for ``kind="temperature"``).
     bias_ : ndarray of shape (k,)
         Fitted biases, ``bias_[0] == 0``.
+    floor_ : float
+        Smallest output probability (0 with ``shrinkage=0``).
     n_classes_ : int
 
     Examples
@@ -115,8 +166,9 @@ class BiasCorrectedScaling:
     True
     """
 
-    def __init__(self, kind: str = "temperature") -> None:
+    def __init__(self, kind: str = "temperature", shrinkage: float = 0.5) -> None:
         self.kind = kind
+        self.shrinkage = shrinkage
 
     def fit(self, proba: Any, y: Any, sample_weight: Any = None) -> BiasCorrectedScaling:
         """Fit on held-out posteriors.
@@ -150,6 +202,14 @@ class BiasCorrectedScaling:
         check_same_length(("log_proba", z), ("y", y))
         y_idx, _ = check_labels(y, name="y", classes=np.arange(k), min_classes=1)
         w = check_sample_weight(sample_weight, n)
+        shrinkage = _check_shrinkage(self.shrinkage)
+        from ..calibration._base import count_weights
+
+        # rows for the prior's strength and the floor: weights read as row frequencies, or
+        # Kish's effective size where they sum to fewer rows than there are
+        with np.errstate(over="ignore"):
+            n_rows = float(count_weights(w)[0].sum())
+        lam = shrinkage / n_rows if 0.0 < n_rows < np.inf else 0.0
         w = w / w.sum()
         onehot = np.zeros((n, k))
         onehot[np.arange(n), y_idx] = 1.0
@@ -167,7 +227,8 @@ class BiasCorrectedScaling:
             resid = (np.exp(logp) - onehot) * w[:, None]  # d loss / d logits
             g_a = np.sum(resid * z, axis=0)
             g_scale = np.array([g_a.sum()]) if n_scale == 1 else g_a
-            return loss, np.concatenate([g_scale, resid.sum(axis=0)[1:]])
+            pen, pen_grad, _ = scale_penalty(theta, n_scale, lam)
+            return loss + pen, np.concatenate([g_scale, resid.sum(axis=0)[1:]]) + pen_grad
 
         theta0 = np.concatenate([np.ones(n_scale), np.zeros(k - 1)])
         if (
@@ -180,7 +241,7 @@ class BiasCorrectedScaling:
 
         def hess(theta: np.ndarray) -> np.ndarray:
             a, b = unpack(theta)
-            return hess_logits(z * a + b)
+            return hess_logits(z * a + b) + scale_penalty(theta, n_scale, lam)[2]
 
         theta, converged = _newton(loss_grad, hess, theta0, n_scale)
         if not converged:  # pragma: no cover - Newton on this convex loss converges in a few steps
@@ -199,6 +260,7 @@ class BiasCorrectedScaling:
         self.bias_ = np.array(b, dtype=float)
         self.n_classes_ = k
         self.converged_ = bool(converged)
+        self.floor_ = _floor(n_rows, k) if lam > 0 else 0.0
         return self
 
     def predict_log_proba(self, log_proba: Any) -> np.ndarray:
@@ -211,7 +273,13 @@ class BiasCorrectedScaling:
                 f"`log_proba` has {z.shape[1]} columns but the scaling was fitted on "
                 f"{self.n_classes_}."
             )
-        return _log_softmax(z * self.scale_ + self.bias_, axis=1)
+        out = _log_softmax(z * self.scale_ + self.bias_, axis=1)
+        floor = float(getattr(self, "floor_", 0.0))
+        if floor > 0.0:
+            # every probability at least the floor, then the rows renormalised
+            out = np.maximum(out, np.log(floor))
+            out = out - np.log(np.exp(out).sum(axis=1, keepdims=True))
+        return out
 
     def predict(self, proba: Any) -> np.ndarray:
         """Calibrated posteriors from posteriors of shape (n, k)."""

@@ -1,0 +1,220 @@
+"""How CostPolicyWrapper turns held-out predictions into its decision rule.
+
+The wrapper itself (parameters, fitting the estimator, prediction) is in ``_cost_policy.py``;
+this mixin holds what a reader looks for when asking *which rule was fitted and why*: the
+binary cutoff (searched, fixed, with a capacity or a guarantee), the per-class offsets of the
+multiclass rule (tuned or certified for recall floors), and how actions and capacity are named.
+"""
+
+from __future__ import annotations
+
+import numbers
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+
+from ._cost_policy_summary import CURVE_POINTS, SMALL_HELDOUT_ROWS, _heldout_summary
+from ._validation import plain
+from .decision import (
+    apply_class_offsets,
+    capacity_cutoff,
+    check_capacity,
+    check_row_costs,
+    expected_costs,
+    fit_action_budget,
+    guaranteed_class_offsets,
+    guaranteed_cutoff,
+    plugin_cutoff,
+    search_cutoff,
+    tune_class_offsets,
+)
+from .decision._cutoff import _thin_cost_curve
+
+__all__: list[str] = []
+
+
+class _RuleFitting:
+    """Mixin of :class:`probwrap.CostPolicyWrapper`: fitting the rule on held-out predictions."""
+
+    def _guarantee_args(self) -> dict[str, Any]:
+        g = self.guarantee
+        allowed = {"requirement", "target", "confidence", "method"}
+        floors_form = isinstance(g, Mapping) and set(g) - {"confidence", "method"} == {
+            "recall_floors"
+        }
+        requirement_form = (
+            isinstance(g, Mapping) and {"requirement", "target"} <= set(g) and set(g) <= allowed
+        )
+        if not (floors_form or requirement_form):
+            raise ValueError(
+                "`guarantee` must be a dict with keys 'requirement' and 'target' (and optionally "
+                f"'confidence', 'method'), e.g. {{'requirement': 'recall', 'target': 0.9}}, or "
+                "with more than two classes {'recall_floors': {label: floor}} (and optionally "
+                f"'confidence', 'method'); got {plain(g)!r}."
+            )
+        if self.strategy != "tuned" or self.costs is None or callable(self.costs):
+            raise ValueError(
+                "`guarantee` needs strategy='tuned' with constant costs (the cutoff is searched "
+                f"among the certified ones); got strategy={plain(self.strategy)!r}"
+                f"{' and no costs' if self.costs is None else ''}."
+            )
+        return dict(g)
+
+    def _check_heldout_proba(self, values: np.ndarray, k: int) -> np.ndarray:
+        if values.ndim != 2 or values.shape[1] != k:
+            raise ValueError(
+                f"`estimator`'s predict_proba returned shape {values.shape}; expected (n, {k})."
+            )
+        return values
+
+    def _row_costs(self, X: Any, k: int) -> np.ndarray:
+        out = self.costs(X)
+        n = _num_rows(X)
+        return check_row_costs(out, n, n_classes=k, name="costs(X)")
+
+    def _resolve_actions(self, n_actions: int) -> np.ndarray:
+        if self.actions is None:
+            if n_actions != self.classes_.shape[0]:
+                raise ValueError(
+                    f"`actions` must name the {n_actions} actions (columns of `costs`): there are "
+                    f"{self.classes_.shape[0]} classes, so the class labels cannot be used."
+                )
+            return self.classes_.copy()
+        labels = np.asarray(self.actions)
+        if labels.ndim != 1 or labels.shape[0] != n_actions:
+            raise ValueError(
+                f"`actions` must have one label per column of `costs` ({n_actions}); got shape "
+                f"{labels.shape}."
+            )
+        if np.unique(labels).shape[0] != labels.shape[0]:
+            raise ValueError(f"`actions` must be distinct; got {labels.tolist()}.")
+        return labels
+
+    def _resolve_capacity(self, n_actions: int) -> tuple[int | None, float | None]:
+        if self.capacity is None:
+            return None, None
+        if isinstance(self.capacity, Mapping):
+            (label, share), = self.capacity.items()
+            matches = np.flatnonzero(self.actions_ == label)
+            if matches.shape[0] != 1:
+                raise ValueError(
+                    f"`capacity` names action {plain(label)!r}, which is not among the actions "
+                    f"{self.actions_.tolist()}."
+                )
+            return int(matches[0]), check_capacity(share)
+        if n_actions != 2:
+            raise ValueError(
+                f"`capacity` as a number limits the second of two actions; there are {n_actions} "
+                "actions, so name the limited one: capacity={action: share}."
+            )
+        return 1, check_capacity(self.capacity)
+
+    def _fit_cutoff(self, ho, proba, matrix, share) -> None:
+        if self.strategy == "fixed":
+            cutoff = _check_cutoff(self.cutoff)
+        elif self.guarantee is not None:
+            p = proba[:, 1]
+            g = guaranteed_cutoff(
+                p, ho.y_index, matrix, sample_weight=ho.sample_weight, capacity=share,
+                score_bounds=(0.0, 1.0), **self._guarantee_args(),
+            )
+            self.guarantee_ = g
+            self.cost_curve_ = g.unconstrained
+            self.cutoff_ = g.cutoff
+            return
+        elif self.strategy == "tuned" and self.costs is not None:
+            p = proba[:, 1]
+            res = search_cutoff(
+                p, ho.y_index, matrix, sample_weight=ho.sample_weight, capacity=share,
+                score_bounds=(0.0, 1.0),
+            )
+            self.cutoff_ = res.cutoff
+            if self.keep_heldout or np.count_nonzero(ho.sample_weight) <= SMALL_HELDOUT_ROWS:
+                self.cost_curve_ = res
+                self._interval_inputs = (p, ho.y_index, matrix, ho.sample_weight, ho.fold, share)
+            else:
+                self.cost_curve_ = _thin_cost_curve(res, CURVE_POINTS)
+                del res  # the full curve (three arrays as long as the rows) goes before the tally
+                self._interval_inputs = (
+                    "summary", _heldout_summary(self, p, ho, matrix, share), matrix, share
+                )
+            return
+        else:
+            cutoff = plugin_cutoff(matrix)
+        if share is not None:
+            cap_cut = capacity_cutoff(
+                proba[:, 1], share, sample_weight=ho.sample_weight, score_bounds=(0.0, 1.0)
+            )
+            cutoff = max(cutoff, cap_cut)
+        self.cutoff_ = float(cutoff)
+
+    def _fit_offsets(self, ho, proba, matrix, row_costs, k, budget_index, share) -> None:
+        costs = matrix if row_costs is None else row_costs
+        if self.strategy == "fixed":
+            if _scalar_cutoff(self.cutoff):
+                raise ValueError(
+                    "`cutoff` must be per-class offsets of shape "
+                    f"({k},) here (more than two actions or per-row costs); a single "
+                    "probability cutoff applies only to two actions with constant costs."
+                )
+            offsets = np.array(self.cutoff, dtype=float)
+            if offsets.shape != (k,) or not np.all(np.isfinite(offsets)):
+                raise ValueError(
+                    f"`cutoff` must be finite per-class offsets of shape ({k},); got "
+                    f"{plain(self.cutoff)!r}."
+                )
+        elif self.guarantee is not None:
+            args = self._guarantee_args()
+            floors = args.pop("recall_floors")
+            if not isinstance(floors, Mapping):
+                raise ValueError(
+                    "`guarantee['recall_floors']` must be a dict {class label: floor}; got "
+                    f"{plain(floors)!r}."
+                )
+            index = {}
+            for label, floor in floors.items():
+                hit = np.flatnonzero(self.classes_ == label)
+                if hit.shape[0] != 1:
+                    raise ValueError(
+                        f"`guarantee['recall_floors']` names {plain(label)!r}, which is not among "
+                        f"the classes {self.classes_.tolist()}."
+                    )
+                index[int(hit[0])] = floor
+            g = guaranteed_class_offsets(
+                proba, ho.y_index, costs, recall_floors=index,
+                sample_weight=ho.sample_weight, **args,
+            )
+            self.guarantee_ = g
+            offsets = g.offsets
+        elif self.strategy == "tuned" and self.costs is not None:
+            res = tune_class_offsets(proba, ho.y_index, costs, sample_weight=ho.sample_weight)
+            offsets = res.offsets
+        else:
+            offsets = np.zeros(k)
+        self.class_offsets_ = offsets
+        if share is not None:
+            E = expected_costs(apply_class_offsets(proba, offsets), costs)
+            self.action_budget_ = fit_action_budget(
+                E, budget_index, share, sample_weight=ho.sample_weight
+            )
+
+
+def _scalar_cutoff(cutoff: Any) -> bool:
+    return isinstance(cutoff, numbers.Real) and not isinstance(cutoff, bool)
+
+
+def _check_cutoff(cutoff: Any) -> float:
+    if not _scalar_cutoff(cutoff) or not np.isfinite(float(cutoff)):
+        raise ValueError(f"`cutoff` must be a finite probability in [0, 1]; got {plain(cutoff)!r}.")
+    value = float(cutoff)
+    if not 0.0 <= value <= 1.0:
+        raise ValueError(f"`cutoff` must be a probability in [0, 1]; got {plain(cutoff)!r}.")
+    return value
+
+
+def _num_rows(X: Any) -> int:
+    shape = getattr(X, "shape", None)
+    if shape is not None and len(shape) > 0:
+        return int(shape[0])
+    return len(X)
