@@ -13,12 +13,16 @@ The script checks calibration overall (Hosmer-Lemeshow, Spiegelhalter's Z, smoot
 decomposition of the Brier score) and then by parcel size with
 ``probwrap.metrics.calibration_by_group``: calibration error, slope and intercept, scores with
 bootstrap intervals, and the inspection rule's share acted on, error rates and mean cost —
-largest gaps between size classes first.
+largest gaps between size classes first — and writes the same table as the "By group" section
+of the HTML report (``write_report(..., groups=...)``).
 
 Run: python examples/check_by_parcel_size.py
 """
 
 from __future__ import annotations
+
+import tempfile
+from pathlib import Path
 
 import numpy as np
 from sklearn.linear_model import LogisticRegression
@@ -34,6 +38,7 @@ from probwrap.metrics import (
     smooth_calibration_error,
     spiegelhalter_z_test,
 )
+from probwrap.report import write_report
 
 COSTS = {"fp": 3.0, "tp": 3.0, "fn": 40.0, "tn": 0.0}  # inspect: 3; missed damage: 40
 CUTOFF = 3.0 / 40.0  # the Bayes cutoff of these costs for calibrated probabilities
@@ -80,3 +85,10 @@ for gap in checks.gaps[:4]:
     print(f"  {gap.metric:<22s} {gap.gap:.3f}  (highest: {gap.highest}, lowest: {gap.lowest})")
 for note in checks.notes:
     print("  note:", note)
+
+# the same table is the "By group" section of the HTML report
+out = Path(tempfile.mkdtemp()) / "by-size.html"
+content = write_report(out, y_true=y, y_prob=p, costs=COSTS, groups=size_class(test.data[:, 0]),
+                       n_resamples=30)
+print(f"\nreport with a 'By group' section ({len(content.group_checks.groups)} size classes) "
+      f"-> {out.name}")

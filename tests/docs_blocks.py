@@ -114,6 +114,22 @@ def _three_way(n, season, seed, labelled):
     return frame
 
 
+def _late_labelled(n, seed):
+    """Parcels shipped over the last 60 days; damage claims arrive ~12 days after shipping."""
+    import numpy as np
+    import pandas as pd
+
+    model, make = _scored(2)
+    s = make(n, random_state=seed)
+    rng = np.random.default_rng(seed)
+    since = rng.uniform(0, 60, n)
+    delay = rng.exponential(12.0, n)
+    claimed = (s.target == 1) & (delay <= since)
+    return pd.DataFrame({"risk": model.predict_proba(s.data)[:, 1],
+                         "days": np.round(np.where(claimed, delay, since), 2),
+                         "claimed": claimed.astype(int)})
+
+
 INPUT_FILES = {
     # labelled held-out scores of the summer model: probabilities in "risk"; "damaged" holds
     # yes / no in heldout.csv (the README shows --positive-label) and 0 / 1 in scores.csv
@@ -126,6 +142,8 @@ INPUT_FILES = {
     # three outcomes: one probability column per class, labels by class name
     "three.csv": lambda: _three_way(3000, "summer", 14, labelled=True),
     "winter3.csv": lambda: _three_way(2000, "winter", 15, labelled=False),
+    # late labels: "days" observed so far (until the claim, or until today), "claimed" 1/0
+    "claims.csv": lambda: _late_labelled(4000, 16),
 }
 
 

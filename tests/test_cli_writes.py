@@ -195,8 +195,12 @@ def test_full_disk_leaves_the_previous_output_intact(scores, capsys, kind):
         assert json.loads(out.read_text())["method"] == "platt"
 
 
+# A run started in the background by a non-interactive shell inherits SIGINT as ignored, and
+# Python then installs no KeyboardInterrupt handler; the user's terminal gives the default one.
+# The child restores it, so the test sees what a user pressing Ctrl-C sees wherever it runs.
 _SLOW_WRITE = textwrap.dedent("""
-    import sys, time
+    import signal, sys, time
+    signal.signal(signal.SIGINT, signal.default_int_handler)
     import pandas as pd
     from probwrap.cli import main
     original = pd.DataFrame.to_csv

@@ -32,6 +32,13 @@ from ._common import (
 )
 from ._files import check_out_suffix, check_writable, write_table, write_text
 from ._progress import Stages, progress
+from ._promise_flags import (
+    add_late_label_flags,
+    late_label_columns,
+    late_label_line,
+    late_label_summary,
+    read_late_labels,
+)
 from ._tables import numeric_column, probability_column, read_labels, read_table
 
 __all__ = [
@@ -96,9 +103,13 @@ def to_log_odds(scores: np.ndarray, scale: str) -> np.ndarray:
 
 
 def fit_map(
-    log_odds: np.ndarray, y: np.ndarray, *, method: str, folds: int, seed: int | None
+    log_odds: np.ndarray, y: np.ndarray, *, method: str, folds: int, seed: int | None,
+    sample_weight: np.ndarray | None = None,
 ) -> Any:
-    """Fit :class:`probwrap.CalibrationWrapper` on the scores as a frozen model; return it."""
+    """Fit :class:`probwrap.CalibrationWrapper` on the scores as a frozen model; return it.
+
+    ``sample_weight`` (e.g. late-label weights) goes to the wrapper's ``fit``.
+    """
     from sklearn.frozen import FrozenEstimator
 
     from probwrap import CalibrationWrapper
@@ -106,7 +117,7 @@ def fit_map(
     wrapper = CalibrationWrapper(
         FrozenEstimator(_ScoreColumn().fit()), method=method, cv=folds, random_state=seed
     )
-    return wrapper.fit(log_odds[:, None], y)
+    return wrapper.fit(log_odds[:, None], y, sample_weight=sample_weight)
 
 
 # -- verbs ---------------------------------------------------------------------------------------
@@ -115,17 +126,26 @@ def _fit(args: argparse.Namespace) -> int:
 
     with Stages("calibrate", ["reading", "fitting the map", "writing"]) as stages:
         stages.start("reading")
-        frame = read_table(args.scores, exact=[args.score_column])
+        late_columns = late_label_columns(args, args._fit_parser)
+        frame = read_table(args.scores, exact=[args.score_column, *(late_columns or [])])
         scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
-        y, labels = read_labels(
-            frame, args.label_column, args.scores, positive=args.positive_label
-        )
+        late = weights = None
+        if late_columns is None:
+            y, labels = read_labels(
+                frame, args.label_column, args.scores, positive=args.positive_label
+            )
+            closed = np.ones(y.shape[0], dtype=bool)
+        else:
+            late = read_late_labels(frame, args, args.scores)
+            y, weights, closed = late.y, late.sample_weight, ~late.is_open
+            labels = [f"no event within {late.horizon:g}", f"event within {late.horizon:g}"]
         check_row_count("calibrate", scores.shape[0], args.scores)
-        check_ranking("calibrate", scores, y, labels, args.scores)
-        counts = np.bincount(y, minlength=2)
+        check_ranking("calibrate", scores[closed], y[closed], labels, args.scores)
+        counts = np.bincount(y[closed], minlength=2)
         if args.method == "auto" and counts.min() < 2:
             raise DataError(
-                f"{args.scores}: column {shown(args.label_column)} has only {counts.min()} "
+                f"{args.scores}: column {shown(args.label_column or args.event_column)} has "
+                f"only {counts.min()} "
                 "row(s) of one label; --method auto needs at least two of each to compare maps "
                 "by cross-validation"
             )
@@ -135,7 +155,7 @@ def _fit(args: argparse.Namespace) -> int:
                 warnings.simplefilter("always")
                 wrapper = fit_map(
                     to_log_odds(scores, args.scale), y, method=args.method, folds=args.folds,
-                    seed=args.seed,
+                    seed=args.seed, sample_weight=weights,
                 )
         except ValueError as exc:
             raise DataError(f"{args.scores}: the map cannot be fitted ({exc})") from None
@@ -148,6 +168,8 @@ def _fit(args: argparse.Namespace) -> int:
             "fitted_on": Path(args.scores).name,
             "score_column": args.score_column,
         }
+        if late is not None:
+            metadata["late_labels"] = late_label_summary(late)
         if args.method == "auto":
             metadata["auto_log_loss"] = {
                 name: {"log_loss": loss, "standard_error": se}
@@ -160,6 +182,8 @@ def _fit(args: argparse.Namespace) -> int:
         f"fitted a {wrapper.method_} map on {scores.shape[0]} rows ({counts[1]} with label "
         f"{shown(labels[1])}) and saved it to {args.out}"
     )
+    if late is not None:
+        print("  " + late_label_line(late))
     if args.method == "auto":
         for name, (loss, se) in sorted(wrapper.method_scores_.items(), key=lambda kv: kv[1][0]):
             mark = "  <- chosen" if name == wrapper.method_ else ""
@@ -276,7 +300,9 @@ def register(subparsers: Any) -> None:
     )
     fit.add_argument("--scores", required=True, metavar="FILE", help="CSV or Parquet score file")
     fit.add_argument("--score-column", required=True, metavar="C", help="column of scores")
-    fit.add_argument("--label-column", required=True, metavar="L", help="column of true labels")
+    fit.add_argument("--label-column", metavar="L",
+                     help="column of true labels (or late labels: --time-column, "
+                     "--event-column, --horizon)")
     add_positive_label_flag(fit)
     add_scale_flag(fit)
     fit.add_argument(
@@ -289,6 +315,7 @@ def register(subparsers: Any) -> None:
         help="cross-validation folds used by --method auto (default 5)",
     )
     fit.add_argument("--seed", type=int, default=0, help="seed of the folds (default 0)")
+    add_late_label_flags(fit)
     fit.add_argument("--out", required=True, metavar="MAP.json",
                      help="where to save the map (.json)")
 
@@ -297,7 +324,7 @@ def register(subparsers: Any) -> None:
         check_writable(args.out)
         return _fit(args)
 
-    fit.set_defaults(func=run_fit)
+    fit.set_defaults(func=run_fit, _fit_parser=fit)
 
     apply = steps.add_parser(
         "apply",

@@ -27,6 +27,15 @@ from ._common import (
     shown,
 )
 from ._progress import Stages
+from ._promise_flags import (
+    add_guarantee_flags,
+    add_late_label_flags,
+    guarantee_args,
+    late_label_columns,
+    late_label_line,
+    late_label_summary,
+    read_late_labels,
+)
 from ._tables import read_labels, read_table
 
 __all__ = ["register", "cutoff_summary"]
@@ -67,6 +76,7 @@ def cutoff_summary(
     confidence_level: float = 0.95,
     seed: int | None = 0,
     guarantee: dict[str, Any] | None = None,
+    sample_weight: np.ndarray | None = None,
 ) -> dict[str, Any]:
     """Everything ``probwrap cutoff`` reports, as a JSON-ready dictionary.
 
@@ -88,6 +98,10 @@ def cutoff_summary(
         Keyword arguments of :func:`probwrap.decision.guaranteed_cutoff` (``requirement``,
         ``target``, ``confidence``, ``method``): adds the least-cost cutoff certified to meet
         that requirement under ``"guarantee"``.
+    sample_weight : ndarray of shape (n,), optional
+        Row weights (e.g. the late-label weights of
+        :func:`probwrap.late_labels.labels_at_horizon`): every search, interval, cost and
+        share is weighted.
 
     Returns
     -------
@@ -106,14 +120,20 @@ def cutoff_summary(
 
     matrix = binary_cost_matrix(costs)
     bounds = (0.0, 1.0) if scale == "proba" else None
-    res = search_cutoff(scores, y, matrix, capacity=capacity, score_bounds=bounds)
+    w = np.ones(scores.shape[0]) if sample_weight is None else np.asarray(sample_weight, float)
+
+    def mean(values: np.ndarray) -> float:
+        return float(np.average(values, weights=w))
+
+    res = search_cutoff(scores, y, matrix, capacity=capacity, score_bounds=bounds,
+                        sample_weight=sample_weight)
     ci = None
     if n_resamples > 0:
         ci = cutoff_interval(
             scores, y, matrix, capacity=capacity, score_bounds=bounds, n_resamples=n_resamples,
-            confidence_level=confidence_level, random_state=seed,
+            confidence_level=confidence_level, random_state=seed, sample_weight=sample_weight,
         )
-    flagged = float(np.mean(scores > res.cutoff))
+    flagged = mean(scores > res.cutoff)
     realised = matrix[y, 1]
     out: dict[str, Any] = {
         "n_rows": int(scores.shape[0]),
@@ -128,9 +148,9 @@ def cutoff_summary(
         "n_resamples": int(n_resamples),
         "expected_cost": float(res.cost),
         "flagged_share": flagged,
-        "cost_flag_none": float(np.mean(matrix[y, 0])),
+        "cost_flag_none": mean(matrix[y, 0]),
         # acting on every row breaks any capacity below 1
-        "cost_flag_all": float(np.mean(realised)) if capacity in (None, 1.0) else None,
+        "cost_flag_all": mean(realised) if capacity in (None, 1.0) else None,
     }
     if scale == "proba":
         try:
@@ -143,14 +163,14 @@ def cutoff_summary(
                 out[name] = None
                 continue
             action = (scores > cut).astype(np.intp)
-            share = float(action.mean())
+            share = mean(action)
             over = capacity is not None and share > capacity
-            out[name] = None if over else float(np.mean(matrix[y, action]))
+            out[name] = None if over else mean(matrix[y, action])
     if guarantee is not None:
         from probwrap.decision import guaranteed_cutoff
 
         g = guaranteed_cutoff(scores, y, matrix, capacity=capacity, score_bounds=bounds,
-                              **guarantee)
+                              sample_weight=sample_weight, **guarantee)
         out["guarantee"] = {
             "requirement": g.requirement,
             "target": g.target,
@@ -158,7 +178,7 @@ def cutoff_summary(
             "confidence": g.confidence,
             "cutoff": g.cutoff,
             "expected_cost": g.cost,
-            "flagged_share": float(np.mean(scores > g.cutoff)),
+            "flagged_share": mean(scores > g.cutoff),
             "achieved": g.achieved,
             "bound": g.bound,
             "p_value": None if math.isnan(g.p_value) else g.p_value,
@@ -215,29 +235,25 @@ def _text(out: dict[str, Any], path: str) -> str:
     return "\n".join(lines)
 
 
-def _guarantee_args(args: argparse.Namespace) -> dict[str, Any] | None:
-    if args.guarantee is None:
-        if args.guarantee_target is not None:
-            raise DataError("--guarantee-target needs --guarantee (which metric).")
-        return None
-    if args.guarantee_target is None:
-        raise DataError(
-            f"--guarantee {args.guarantee} needs --guarantee-target (e.g. 0.9)."
-        )
-    return {"requirement": args.guarantee, "target": args.guarantee_target,
-            "confidence": args.guarantee_confidence, "method": args.guarantee_method}
-
-
 def _run(args: argparse.Namespace) -> int:
+    late_columns = late_label_columns(args, args._parser)
+    late = weights = None
     with Stages("cutoff", ["reading", "searching the cutoff and its interval"]) as stages:
         stages.start("reading")
-        frame = read_table(args.scores, exact=[args.score_column])
+        frame = read_table(args.scores, exact=[args.score_column, *(late_columns or [])])
         scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
-        y, labels = read_labels(
-            frame, args.label_column, args.scores, positive=args.positive_label
-        )
+        if late_columns is None:
+            y, labels = read_labels(
+                frame, args.label_column, args.scores, positive=args.positive_label
+            )
+            closed = np.ones(y.shape[0], dtype=bool)
+        else:
+            late = read_late_labels(frame, args, args.scores)
+            y, weights = late.y, late.sample_weight
+            labels = [f"no event within {late.horizon:g}", f"event within {late.horizon:g}"]
+            closed = ~late.is_open
         check_row_count("cutoff", scores.shape[0], args.scores)
-        check_ranking("cutoff", scores, y, labels, args.scores)
+        check_ranking("cutoff", scores[closed], y[closed], labels, args.scores)
         costs = {"tp": args.cost_tp, "fp": args.cost_fp, "fn": args.cost_fn, "tn": args.cost_tn}
         stages.start("searching the cutoff and its interval")
         with warnings.catch_warnings(record=True) as caught:
@@ -246,16 +262,21 @@ def _run(args: argparse.Namespace) -> int:
                 out = cutoff_summary(
                     scores, y, costs, scale=args.scale, capacity=args.capacity,
                     n_resamples=args.resamples, confidence_level=args.confidence,
-                    seed=args.seed, guarantee=_guarantee_args(args),
+                    seed=args.seed, guarantee=guarantee_args(args),
+                    sample_weight=weights,
                 )
             except ValueError as exc:
                 raise DataError(f"{args.scores}: {exc}") from None
     report_warnings("cutoff", caught)
     out["labels"] = {"negative": labels[0], "positive": labels[1]}
+    if late is not None:
+        out["late_labels"] = late_label_summary(late)
     if args.format == "json":
         print(json.dumps(out, indent=2, allow_nan=False))
     else:
         print(_text(out, args.scores))
+        if late is not None:
+            print("  " + late_label_line(late))
     return 0
 
 
@@ -270,7 +291,9 @@ def register(subparsers: Any) -> None:
     )
     parser.add_argument("--scores", required=True, metavar="FILE", help="CSV or Parquet file")
     parser.add_argument("--score-column", required=True, metavar="C", help="column of scores")
-    parser.add_argument("--label-column", required=True, metavar="L", help="column of labels")
+    parser.add_argument("--label-column", metavar="L",
+                        help="column of labels (or late labels: --time-column, --event-column, "
+                        "--horizon)")
     add_positive_label_flag(parser)
     add_scale_flag(parser)
     for key, what in (
@@ -293,26 +316,7 @@ def register(subparsers: Any) -> None:
         help="coverage of the interval (default 0.95)",
     )
     parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
-    parser.add_argument(
-        "--guarantee", default=None,
-        choices=["recall", "precision", "false_positive_rate", "flagged_share"],
-        help="also find the least-cost cutoff certified to keep this metric at or above "
-        "(recall, precision) or at or below (false_positive_rate, flagged_share) "
-        "--guarantee-target on new rows",
-    )
-    parser.add_argument(
-        "--guarantee-target", type=_level, default=None, metavar="X",
-        help="the floor or ceiling of --guarantee, e.g. 0.9",
-    )
-    parser.add_argument(
-        "--guarantee-confidence", type=_level, default=0.9, metavar="LEVEL",
-        help="probability that the guarantee holds (default 0.9)",
-    )
-    parser.add_argument(
-        "--guarantee-method", default="high_probability",
-        choices=["high_probability", "expectation"],
-        help="high_probability (default): holds with --guarantee-confidence; expectation: "
-        "holds on average (not for precision)",
-    )
+    add_guarantee_flags(parser)
+    add_late_label_flags(parser)
     add_format_flag(parser)
-    parser.set_defaults(func=_run)
+    parser.set_defaults(func=_run, _parser=parser)

@@ -26,6 +26,15 @@ from ._common import (
 )
 from ._files import check_out_suffix, check_writable, write_text
 from ._progress import Stages
+from ._promise_flags import (
+    add_alarm_flags,
+    add_guarantee_flags,
+    add_late_label_flags,
+    guarantee_args,
+    late_label_columns,
+    promise_summary,
+    read_late_labels,
+)
 from ._tables import numeric_column, probability_column, read_labels, read_table
 
 __all__ = ["register"]
@@ -68,9 +77,11 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--class-columns", metavar="C1,C2,...",
                         help="instead of --score-column: one probability column per class, "
                         "comma-separated; labels are these column names or indices 0..k-1")
-    parser.add_argument("--label-column", required=True, metavar="L",
+    parser.add_argument("--label-column", metavar="L",
                         help="column of labels: two values (0/1, or any two with "
-                        "--positive-label), or with --class-columns the class of each row")
+                        "--positive-label), or with --class-columns the class of each row "
+                        "(binary files: or late labels, --time-column, --event-column, "
+                        "--horizon)")
     add_positive_label_flag(parser)
     add_scale_flag(parser, help_extra=" (binary files; --class-columns take probabilities)")
     parser.add_argument("--cost-matrix", metavar="ROWS",
@@ -99,9 +110,13 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         help=f"reliability bins (default 10, at most {MAX_BINS})")
     add_resamples_flag(parser, allow_zero=False)
     parser.add_argument("--group-column", metavar="G",
-                        help="binary files: column of group labels (e.g. depot); adds a 'By "
-                        "group' section with calibration, scores and the rule's error rates "
-                        "and cost per group, largest gaps first")
+                        help="column of group labels (e.g. depot); adds a 'By group' section "
+                        "with calibration, scores and the rule's error rates (binary) or "
+                        "action shares (several classes) and cost per group, largest gaps "
+                        "first")
+    add_alarm_flags(parser)
+    add_guarantee_flags(parser)
+    add_late_label_flags(parser)
     parser.add_argument("--seed", type=int, default=0, help="bootstrap seed (default 0)")
     parser.add_argument("--title", default="probwrap report", help="report title")
     parser.add_argument("--out", required=True, metavar="FILE",
@@ -139,6 +154,13 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         parser.error("with --class-columns give costs as --cost-matrix, not --cost-fp/--cost-fn")
     if args.batch_size is not None:
         parser.error("--batch-size is available for binary score files only")
+    if args.guarantee is not None or args.guarantee_target is not None:
+        parser.error("--guarantee is available for binary score files only (one cutoff)")
+    if any(v is not None for v in (args.time_column, args.event_column, args.horizon)):
+        parser.error("late labels (--time-column, --event-column, --horizon) are available for "
+                     "binary score files only")
+    if args.label_column is None:
+        parser.error("--class-columns needs --label-column")
     if args.positive_label is not None:
         parser.error("--positive-label is for binary score files (--score-column); with "
                      "--class-columns the labels name the classes")
@@ -187,9 +209,12 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         check_row_count("report", P.shape[0], args.scores, "labelled rows")
         if q is not None:
             check_row_count("report", q.shape[0], args.unlabelled, "unlabelled rows")
+        extra = {}
+        if args.group_column is not None:
+            extra["groups"] = _group_labels(frame, args.group_column, args.scores)
         content = _build_and_write(
             args, stages, y_true=y, y_prob=P, costs=matrix, capacity=capacity,
-            action_names=actions, unlabelled_prob=q, class_names=columns,
+            action_names=actions, unlabelled_prob=q, class_names=columns, **extra,
         )
     summary = {"out": args.out, "n_rows": int(content.n_rows),
                "n_classes": int(content.n_classes)}
@@ -300,8 +325,6 @@ def _handler(args: argparse.Namespace) -> int:
     if (args.score_column is None) == (args.class_columns is None):
         parser.error("give either --score-column (binary) or --class-columns (one per class)")
     if args.class_columns is not None:
-        if args.group_column is not None:
-            parser.error("--group-column is available with --score-column (binary) only")
         return _class_handler(args, parser)
     if args.cost_matrix is not None or args.actions is not None or args.capacity_action:
         parser.error("--cost-matrix, --actions and --capacity-action need --class-columns")
@@ -314,6 +337,10 @@ def _handler(args: argparse.Namespace) -> int:
         parser.error("--capacity needs costs (--cost-fp and --cost-fn)")
     if args.batch_size is not None and args.unlabelled is None:
         parser.error("--batch-size needs --unlabelled")
+    if args.guarantee is not None and not given:
+        parser.error("--guarantee needs costs (--cost-fp and --cost-fn)")
+    guarantee = guarantee_args(args)
+    late_columns = late_label_columns(args, parser)
 
     check_writable(args.out)
     costs = None
@@ -327,12 +354,20 @@ def _handler(args: argparse.Namespace) -> int:
             )
     with Stages("report", ["reading", "computing the report", "writing"]) as stages:
         stages.start("reading")
-        frame = read_table(args.scores, exact=[args.score_column])
+        frame = read_table(args.scores, exact=[args.score_column, *(late_columns or [])])
         p = read_scores(frame, args.score_column, args.scores, scale=args.scale)
-        y, labels = read_labels(frame, args.label_column, args.scores,
-                                positive=args.positive_label)
-        if np.unique(y).shape[0] < 2:  # pragma: no cover - read_labels needs two labels
-            raise DataError(f"{args.scores}: both labels are needed")
+        late = None
+        if late_columns is None:
+            y, labels = read_labels(frame, args.label_column, args.scores,
+                                    positive=args.positive_label)
+            closed = np.ones(y.shape[0], dtype=bool)
+        else:
+            late = read_late_labels(frame, args, args.scores)
+            y, closed = late.y, ~late.is_open
+            labels = [f"no event within {late.horizon:g}", f"event within {late.horizon:g}"]
+        if np.unique(y).shape[0] < 2:
+            raise DataError(f"{args.scores}: both outcomes are needed (rows with and without "
+                            "the event)")
         q = None
         if args.unlabelled is not None:
             column = args.unlabelled_score_column or args.score_column
@@ -343,7 +378,7 @@ def _handler(args: argparse.Namespace) -> int:
         check_row_count("report", p.shape[0], args.scores, "labelled rows")
         if q is not None:
             check_row_count("report", q.shape[0], args.unlabelled, "unlabelled rows")
-        check_ranking("report", p, y, labels, args.scores)
+        check_ranking("report", p[closed], y[closed], labels, args.scores)
         if args.scale == "log-odds":
             from probwrap.calibration import log_odds_to_proba
 
@@ -351,11 +386,18 @@ def _handler(args: argparse.Namespace) -> int:
             q = None if q is None else log_odds_to_proba(q)
         if [str(v) for v in labels] != ["0", "1"]:  # say on the page which class is positive
             args.title = f"{args.title} (positive class: {labels[1]})"
-        extra = {}
+        extra: dict = {"guarantee": guarantee}
         if args.group_column is not None:
             extra["groups"] = _group_labels(frame, args.group_column, args.scores)
+        if late is not None:
+            extra["horizon_labels"] = late
+        else:
+            extra["y_true"] = y
+        if args.batch_size is not None:
+            extra.update(alarm_reference=args.alarm_reference,
+                         alarm_decision_interval=args.alarm_decision_interval)
         content = _build_and_write(
-            args, stages, y_true=y, y_prob=p, costs=costs, capacity=args.capacity,
+            args, stages, y_prob=p, costs=costs, capacity=args.capacity,
             unlabelled_prob=q, batch_size=args.batch_size,
             class_names=None if [str(v) for v in labels] == ["0", "1"] else [
                 str(v) for v in labels], **extra,
@@ -372,5 +414,6 @@ def _handler(args: argparse.Namespace) -> int:
                        shift_pvalue=float(content.shift_pvalue))
         line += (f", prevalence {content.source_prevalence:.4f} -> "
                  f"{content.target_prevalence:.4f} (shift p = {content.shift_pvalue:.3g})")
+    line += promise_summary(content, summary)
     _print_summary(args, line, summary)
     return 0

@@ -12,6 +12,7 @@ from ._corp import IsotonicReliabilityDiagram
 from ._cost import CostCurveDisplay
 from ._cost_space import CostRangeDisplay, GainChartDisplay
 from ._decision_curve import DecisionCurveDisplay
+from ._groups import GroupReliabilityDisplay
 from ._intervals import consistency_band, wilson_interval
 from ._prevalence import ClassPriorDisplay, PrevalenceDriftDisplay
 from ._reliability import ReliabilityDiagram
@@ -25,6 +26,7 @@ __all__ = [
     "CostRangeDisplay",
     "DecisionCurveDisplay",
     "GainChartDisplay",
+    "GroupReliabilityDisplay",
     "IsotonicReliabilityDiagram",
     "PrevalenceDriftDisplay",
     "ReliabilityDiagram",

@@ -67,13 +67,21 @@ def write_report(
     class_names: Any = None,
     progress: Any = None,
     groups: Any = None,
+    guarantee: Any = None,
+    horizon_labels: Any = None,
+    time: Any = None,
+    event: Any = None,
+    horizon: float | None = None,
+    alarm_reference: float | None = None,
+    alarm_decision_interval: float | None = None,
 ) -> ReportContent | MulticlassReportContent:
     """Write a self-contained HTML report and return the numbers it shows.
 
     A "recommendation" box at the top names the rule to use now, why, and its cost and share
     acted on, within the capacity at the estimated prevalence (see ``Recommendation``); warnings
     met while computing a number are shown in a "notes" box beside it (``content.notes``) and
-    warned once more with the number named.
+    warned once more with the number named; those met while drawing a figure, in a box under
+    that figure (note keys ``"figure:<name>"``).
 
     Sections: calibration (Brier score, log loss, expected calibration error (bias-corrected,
     basic bootstrap interval), calibration slope and intercept, each with a bootstrap interval;
@@ -130,6 +138,9 @@ def write_report(
         a prevalence alarm: a two-sided CUSUM of the batch estimates against the source
         prevalence (:func:`probwrap.shift.cusum_alarms`, k = 0.5, h = 5; see
         docs/prevalence_alarms.md).
+    alarm_reference, alarm_decision_interval : float, optional
+        The alarm's reference value k and decision interval h, in standard errors (defaults
+        0.5 and 5: about one false alarm in 465 in-control batches).
     n_bins : int, default=10
         Bins of the reliability diagram and the calibration error.
     n_resamples : int, default=200
@@ -154,10 +165,33 @@ def write_report(
         more as ``("done", total, total)``; for a progress display.
 
     groups : array-like of shape (n,), optional
-        Binary reports: a group label per labelled row; adds a "By group" section with
+        A group label per labelled row; adds a "By group" section. Binary reports use
         :func:`probwrap.metrics.calibration_by_group` (calibration, scores with intervals and
-        the chosen rule's share acted on, error rates and mean cost per group, largest gaps
-        first, groups too small to judge marked). In ``content.group_checks``.
+        the chosen rule's share acted on, error rates and mean cost per group); the general
+        form shows top-label and classwise calibration error, the largest class-share gap,
+        Brier score and log loss with intervals, and the rule in use's mean cost and action
+        shares. Largest gaps first, groups too small to judge marked. In
+        ``content.group_checks``.
+    guarantee : dict, optional
+        Binary reports with costs: a promise to certify on the labelled rows, as for
+        :func:`probwrap.decision.guaranteed_cutoff` (``{"requirement": "recall", "target":
+        0.9, "confidence": 0.9, "method": "high_probability"}``; the last two optional). Adds a
+        "guarantee" row to the decisions table (the least-cost certified cutoff, its cost and
+        share acted on) and a line with the promise, the value on these rows, the certified
+        bound and its p-value; when no cutoff can be certified, an "unreachable" row and the
+        reason (and a ``UserWarning``), never a rule without the promise. Without it, a
+        :class:`~probwrap.CostPolicyWrapper` fitted with ``guarantee=`` supplies its own
+        ``guarantee_`` (certified on its held-out rows). In ``content.guarantee``.
+    time, event, horizon : optional
+        Labels that arrive late, instead of ``y_true`` / ``y``: how long each labelled row has
+        been observed, whether its event happened (1) or not yet (0), and the horizon of the
+        outcome "event within ``horizon``". The labels and inverse-probability-of-censoring
+        weights of :func:`probwrap.late_labels.labels_at_horizon` (times ``sample_weight``,
+        if given) are used for every number and figure, and the calibration section says how
+        many rows are still open (see docs/late_labels.md). In ``content.late_labels``.
+    horizon_labels : HorizonLabels, optional
+        The same, already computed with :func:`~probwrap.late_labels.labels_at_horizon`
+        (then ``sample_weight`` is not given again).
 
     Returns
     -------
@@ -197,6 +231,9 @@ def write_report(
         batch_size=batch_size, n_bins=n_bins, n_resamples=n_resamples,
         confidence_level=confidence_level, random_state=random_state, title=title,
         row_costs=row_costs, class_names=class_names, progress=progress, groups=groups,
+        guarantee=guarantee, horizon_labels=horizon_labels, time=time, event=event,
+        horizon=horizon, alarm_reference=alarm_reference,
+        alarm_decision_interval=alarm_decision_interval,
     )
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)

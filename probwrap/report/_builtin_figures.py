@@ -21,6 +21,7 @@ from ..metrics import (
 from ..plot._intervals import bin_counts, wilson_interval
 from ..plot._style import PALETTE
 from ._alarm_chart import alarm_svg
+from ._common import draw_figure
 from ._svg_axes import nice_ticks
 from ._svg_charts import Chart
 
@@ -255,7 +256,9 @@ def builtin_figures(content: Any) -> dict[str, str]:
 
     Same keys and meaning as :func:`probwrap.report._html.make_figures` for the binary report:
     ``"reliability"`` always, ``"cost"`` when costs were given, ``"decision_curve"`` always,
-    ``"prevalence"`` when a per-batch table was computed, ``"alarm"`` when its CUSUM was. For the general (multiclass or
+    ``"prevalence"`` when a per-batch table was computed, ``"alarm"`` when its CUSUM was.
+    Warnings met while drawing a figure are added to ``content.notes`` under
+    ``"figure:<key>"`` (:func:`._common.draw_figure`). For the general (multiclass or
     multi-action) report, ``content.kind == "general"``, only ``"reliability"`` is returned, in
     its top-label form; the action-share and class-share figures of that report are not drawn
     by the built-in renderer.
@@ -280,26 +283,21 @@ def builtin_figures(content: Any) -> dict[str, str]:
     ['cost', 'decision_curve', 'reliability']
     """
     c = content
+    figs: dict[str, str] = {}
+    draw_figure(c, figs, "reliability", reliability_svg, c.y_true, c.y_prob, n_bins=c.n_bins,
+                sample_weight=c.sample_weight, confidence_level=c.confidence_level, key="rel")
     if getattr(c, "kind", "binary") == "general":
-        return {"reliability": reliability_svg(
-            c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
-            confidence_level=c.confidence_level, key="rel",
-        )}
-    figs = {"reliability": reliability_svg(
-        c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
-        confidence_level=c.confidence_level, key="rel",
-    )}
+        return figs
     if c.cost_matrix is not None:
-        figs["cost"] = cost_svg(c.cost_curve, chosen_cutoff=c.chosen_cutoff,
-                                interval=c.cost_interval, plugin=c.plugin, key="cost",
-                                chosen_name=c.chosen_name)
-    figs["decision_curve"] = decision_curve_svg(
-        c.y_true, c.y_prob, sample_weight=c.sample_weight, marked_threshold=c.chosen_cutoff,
-        key="dc", marked_name=c.chosen_name,
-    )
+        draw_figure(c, figs, "cost", cost_svg, c.cost_curve, chosen_cutoff=c.chosen_cutoff,
+                    interval=c.cost_interval, plugin=c.plugin, key="cost",
+                    chosen_name=c.chosen_name)
+    draw_figure(c, figs, "decision_curve", decision_curve_svg, c.y_true, c.y_prob,
+                sample_weight=c.sample_weight, marked_threshold=c.chosen_cutoff, key="dc",
+                marked_name=c.chosen_name)
     if c.batch_table is not None:
-        figs["prevalence"] = prevalence_svg(c.batch_table, source_prevalence=c.source_prevalence,
-                                            key="prev")
+        draw_figure(c, figs, "prevalence", prevalence_svg, c.batch_table,
+                    source_prevalence=c.source_prevalence, key="prev")
     if getattr(c, "alarm", None) is not None:
-        figs["alarm"] = alarm_svg(c.alarm, key="alarm")
+        draw_figure(c, figs, "alarm", alarm_svg, c.alarm, key="alarm")
     return figs

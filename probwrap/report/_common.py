@@ -26,6 +26,9 @@ __all__ = [
     "as_proba_2d",
     "class_index",
     "metric_row",
+    "FIGURE_NAMES",
+    "draw_figure",
+    "figure_notes",
 ]
 
 #: ``progress(step, done, total)``: called before each long step of a report (``done`` steps of
@@ -109,7 +112,7 @@ class NoteLog:
     def add(self, key: str, about: str, kind: str, message: str, count: int = 1) -> None:
         self.notes.append(ReportNote(key, about, kind, message, count))
 
-    def compute(self, key: str, about: str, fn: Callable[..., Any], *args: Any,
+    def compute(self, key: str, about: str, fn: Callable[..., Any], /, *args: Any,
                 expected: tuple[type[BaseException], ...] = (), **kwargs: Any) -> Any:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
@@ -136,6 +139,43 @@ class NoteLog:
     def about(self, *prefixes: str) -> list[ReportNote]:
         """The notes whose key starts with one of ``prefixes``."""
         return [n for n in self.notes if n.key.startswith(prefixes)]
+
+
+#: what each figure of a report is called in its notes (keys as in ``make_figures``)
+FIGURE_NAMES: dict[str, str] = {
+    "reliability": "reliability diagram",
+    "cost": "cost curve",
+    "decision_curve": "decision curve",
+    "prevalence": "prevalence-by-batch chart",
+    "alarm": "prevalence alarm chart",
+    "actions": "action-share chart",
+    "class_prior": "class-share chart",
+}
+
+
+def draw_figure(content: Any, figures: dict[str, str], key: str, draw: Callable[..., str],
+                /, *args: Any, **kwargs: Any) -> None:
+    """Draw one figure into ``figures[key]``; its warnings become notes about that figure.
+
+    Warnings raised while drawing (a weight rescaled for the per-bin intervals, an estimate
+    outside its interval, ...) are recorded narrowly, as for the numbers, under the key
+    ``"figure:<key>"`` in ``content.notes`` (each distinct message once, with its count; a
+    note already there from an earlier drawing of the same content is not repeated), shown in
+    a notes box under that figure, and warned once more with the figure named. Exceptions
+    propagate: a figure that cannot be drawn is a bug, not a note.
+    """
+    log = NoteLog()
+    figures[key] = log.compute(f"figure:{key}", FIGURE_NAMES.get(key, key), draw, *args,
+                               **kwargs)
+    notes = content.notes
+    for note in log.notes:
+        if note not in notes:
+            notes.append(note)
+
+
+def figure_notes(content: Any, key: str) -> list[ReportNote]:
+    """The notes recorded while drawing the figure ``key``."""
+    return [n for n in getattr(content, "notes", []) if n.key == f"figure:{key}"]
 
 
 def as_positive_proba(values: Any, name: str) -> np.ndarray:

@@ -29,6 +29,7 @@ from ..metrics import (
 )
 from ..plot._common import binary_labels, positive_proba
 from ..shift import PriorEstimator, adjust_to_prior, prior_by_batch, shift_cutoff
+from ._binary_labels import binary_class_names, binary_truth
 from ._binary_rules import (
     BAYES_NAME,
     CHOSEN_NAMES,
@@ -53,6 +54,7 @@ from ._common import (
 )
 from ._fast_metrics import FAST_BOOTSTRAP_ROWS, fast_metric_rows
 from ._general import general_report
+from ._promises import guarantee_summary, resolve_late_labels
 
 __all__ = ["ReportContent", "MetricRow", "Recommendation", "RuleRow", "collect_content"]
 
@@ -97,6 +99,8 @@ class ReportContent:
     class_names: tuple[str, str] = ("negative", "positive")
     group_checks: Any = None
     alarm: Any = None
+    guarantee: Any = None
+    late_labels: Any = None
 
 
 def _inner_chain(model: Any) -> list[Any]:
@@ -138,52 +142,6 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes) -> list[Metric
             for key, label, fn, kw, ideal in specs]
 
 
-def _is_zero_one(labels: Any) -> bool:
-    values = [v.item() if hasattr(v, "item") else v for v in labels]
-    return all(isinstance(v, (bool, int, float)) and v in (0, 1) for v in values)
-
-
-def _binary_truth(y_true: Any, class_names: Any) -> tuple[np.ndarray, Any]:
-    """0/1 labels and the two original labels ``[negative, positive]``.
-
-    Labels 0/1 (or booleans) have positive class 1. Any other pair must be named, in the order
-    ``(negative, positive)``, by ``class_names``: which class is positive is never guessed from
-    the sort order.
-    """
-    arr = np.asarray(y_true)
-    found = np.unique(arr) if arr.ndim == 1 else None
-    if found is None or found.shape[0] > 2 or _is_zero_one(found):
-        return binary_labels(y_true, name="y_true"), found
-    shown = [str(v.item() if hasattr(v, "item") else v) for v in found]
-    if class_names is not None and len(class_names) == 2 and set(shown) <= {
-            str(c) for c in class_names}:
-        order = [found[shown.index(str(c))] if str(c) in shown else None for c in class_names]
-        return (arr == order[1]).astype(float), [str(c) for c in class_names]
-    pair = " and ".join(repr(v) for v in shown)
-    if class_names is not None:
-        raise ValueError(f"`class_names` {[str(c) for c in class_names]} must name the two labels "
-                         f"of `y_true`, {pair}, in the order (negative, positive).")
-    example = tuple(reversed(shown)) if len(shown) == 2 else ("negative", "positive")
-    raise ValueError(
-        f"`y_true` holds the labels {pair}, not 0/1; say which is the positive class (the class "
-        f"`y_prob` is the probability of) with class_names=(negative, positive), e.g. "
-        f"class_names={plain(example)!r}."
-    )
-
-
-def _binary_class_names(class_names: Any, labels: Any) -> tuple[str, str]:
-    """Display names ``(negative, positive)``: ``class_names``, else the labels unless 0/1."""
-    if class_names is not None:
-        names = [str(c) for c in class_names]
-        if len(names) != 2:
-            raise ValueError(f"`class_names` must name the 2 classes (negative, positive); got "
-                             f"{len(names)}: {names}.")
-        return names[0], names[1]
-    if labels is not None and len(labels) == 2 and not _is_zero_one(labels):
-        return tuple(str(v.item() if hasattr(v, "item") else v) for v in labels)
-    return "negative", "positive"
-
-
 def collect_content(
     *,
     y_true: Any = None,
@@ -208,6 +166,13 @@ def collect_content(
     class_names: Any = None,
     progress: ProgressCallback | None = None,
     groups: Any = None,
+    guarantee: Any = None,
+    horizon_labels: Any = None,
+    time: Any = None,
+    event: Any = None,
+    horizon: Any = None,
+    alarm_reference: float | None = None,
+    alarm_decision_interval: float | None = None,
 ) -> Any:
     """Compute the report's numbers; see :func:`probwrap.report.write_report`.
 
@@ -220,18 +185,27 @@ def collect_content(
     chain = _inner_chain(model)
     policy = _find(chain, "CostPolicyWrapper")
     calib = _find(chain, "CalibrationWrapper")
+    late = resolve_late_labels(horizon_labels, time, event, horizon, sample_weight,
+                               labels_given=y_true is not None or y is not None)
+    if late is not None:  # the labels and IPCW weights take the ordinary y / weights path
+        sample_weight = late.sample_weight
+        if model is not None:
+            y = late.y
+        else:
+            y_true = late.y
     general = general_report(
         y_true=y_true, y_prob=y_prob, model=model, X=X, y=y, sample_weight=sample_weight,
         costs=costs, row_costs=row_costs, capacity=capacity, action_names=action_names,
         unlabelled_prob=unlabelled_prob, X_unlabelled=X_unlabelled, prior_shift=prior_shift,
         batch_size=batch_size, n_bins=n_bins, n_resamples=n_resamples,
         confidence_level=confidence_level, rng=rng, title=title, policy=policy, calib=calib,
-        class_names=class_names, progress=progress,
+        class_names=class_names, progress=progress, groups=groups,
     )
     if general is not None:
-        if groups is not None:
-            raise ValueError("`groups` is available for binary reports (two classes, two "
-                             "actions) only.")
+        if guarantee is not None:
+            raise ValueError("`guarantee` is available for binary reports (two classes, two "
+                             "actions, one cutoff) only.")
+        general.late_labels = late
         return general
 
     if model is not None:
@@ -248,14 +222,14 @@ def collect_content(
         if y_true is None or y_prob is None:
             raise ValueError("Give `y_true` and `y_prob` (or a fitted `model` with `X`, `y`).")
         p = as_positive_proba(y_prob, "y_prob")
-        y01, labels = _binary_truth(y_true, class_names)
+        y01, labels = binary_truth(y_true, class_names)
     if y01.shape[0] != p.shape[0]:
         raise ValueError(
             f"`y_true` has {y01.shape[0]} rows but `y_prob` has {p.shape[0]}; they must match."
         )
     if np.unique(y01).shape[0] < 2:
         raise ValueError("The labels must contain both classes to assess calibration.")
-    class_pair = _binary_class_names(class_names, labels)
+    class_pair = binary_class_names(class_names, labels)
     w = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
     cap = check_capacity(capacity)
     if costs is not None:
@@ -265,6 +239,12 @@ def collect_content(
         if progress is not None:
             progress(name, done, total)
 
+    for name, value, low in (("alarm_reference", alarm_reference, 0.0),
+                             ("alarm_decision_interval", alarm_decision_interval, None)):
+        if value is not None and not (isinstance(value, (int, float)) and np.isfinite(value)
+                                      and (value > 0 if low is None else value >= low)):
+            raise ValueError(f"`{name}` must be a finite number "
+                             f"{'> 0' if low is None else '>= 0'}; got {plain(value)!r}.")
     notes = NoteLog()
     step("calibration metrics", 0)
     content = ReportContent(
@@ -278,6 +258,7 @@ def collect_content(
         n_bins=n_bins,
         confidence_level=confidence_level,
         class_names=class_pair,
+        late_labels=late,
     )
     if calib is not None:
         content.calibration_method = str(getattr(calib, "method_", None))
@@ -314,8 +295,9 @@ def collect_content(
             if policy.cost_curve_ is not None:
                 content.cost_curve = policy.cost_curve_
                 content.cost_interval = policy.cutoff_interval_
-                ci = content.cost_interval
-                content.chosen_interval = (float(ci.low), float(ci.high))
+                ci = content.cost_interval  # None for a guaranteed cutoff (no bootstrap)
+                if ci is not None:
+                    content.chosen_interval = (float(ci.low), float(ci.high))
         else:
             content.chosen_cutoff = float(res.cutoff)
             content.cutoff_source = "the least-cost search on the labelled rows of this report"
@@ -339,6 +321,14 @@ def collect_content(
         for key, label, c in candidates:
             content.rules.append(rule_row(key, label, None if key in ("none", "all") else c,
                                            y01, p, matrix, w, cap))
+        content.guarantee = guarantee_summary(guarantee, policy, p, y01, matrix, w, cap, notes)
+        if content.guarantee is not None and content.guarantee.cutoff is not None:
+            content.rules.insert(1, rule_row(
+                "guarantee", f"least-cost cutoff with {content.guarantee.promise}",
+                content.guarantee.cutoff, y01, p, matrix, w, cap))
+    elif guarantee is not None:
+        raise ValueError("`guarantee` needs `costs` (the report shows the least-cost cutoff "
+                         "that keeps the promise).")
 
     # -- prevalence ------------------------------------------------------------------------
     step("prevalence", 2)
@@ -381,10 +371,13 @@ def collect_content(
     if content.batch_table is not None and content.source_prevalence is not None:
         from ._alarm_chart import batch_alarm
 
+        settings = {k: v for k, v in (("reference", alarm_reference),
+                                      ("decision_interval", alarm_decision_interval))
+                    if v is not None}
         content.alarm = notes.compute(
             "batches", "prevalence alarm", batch_alarm, content.batch_table,
             content.source_prevalence, confidence_level=confidence_level,
-            expected=(ValueError,))
+            expected=(ValueError,), **settings)
     E = None
     if content.target_prevalence is not None and content.chosen_cutoff is not None:
         src = content.source_prevalence

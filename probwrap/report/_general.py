@@ -79,6 +79,8 @@ class MulticlassReportContent:
     prior_method: str = "em"
     confidence_level: float = 0.95
     notes: list[ReportNote] = field(default_factory=list)
+    late_labels: Any = None
+    group_checks: Any = None
     recommendation: Recommendation | None = None
 
     # the binary report's names, so that shared code (glance, demo summary) can read either
@@ -126,6 +128,7 @@ def collect_general_content(
     rng: Any,
     title: str,
     progress: Any = None,
+    groups: Any = None,
 ) -> MulticlassReportContent:
     """The numbers of a multiclass and/or multi-action report (see ``write_report``)."""
     n, k = proba.shape
@@ -236,6 +239,21 @@ def collect_general_content(
     if content.rules:
         recommend_general(content, proba, y_index, w, rule_costs, q, notes)
     content.notes = notes.notes
+    if groups is not None:
+        from ._general_groups import multiclass_by_group
+
+        chosen = content.rules[0] if content.rules else None
+        acts = None if chosen is None else chosen.actions
+        row_cost = None
+        if acts is not None:
+            row_cost = (matrix[y_index, acts] if per_row is None
+                        else per_row[np.arange(n), y_index, acts])
+        content.group_checks = multiclass_by_group(
+            y_index, proba, groups, sample_weight=w, actions=acts, row_cost=row_cost,
+            action_names=None if acts is None else content.action_names,
+            rule_label=None if chosen is None else chosen.label, n_bins=n_bins,
+            n_resamples=n_resamples, confidence_level=confidence_level,
+            random_state=int(rng.randint(2**31 - 1)))
     step("done", 4)
     return content
 
@@ -257,7 +275,7 @@ def _needs_general(k: int, costs: Any, row_costs: Any, policy: Any) -> bool:
 def general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_costs, capacity,
                     action_names, unlabelled_prob, X_unlabelled, prior_shift, batch_size,
                     n_bins, n_resamples, confidence_level, rng, title, policy, calib,
-                    class_names, progress) -> Any:
+                    class_names, progress, groups=None) -> Any:
     """The multiclass / multi-action content, or None when the binary report applies."""
 
     if model is not None:
@@ -315,4 +333,5 @@ def general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_cos
         policy=policy, calib=calib, X=X, unlabelled_proba=q, X_unlabelled=X_unlabelled,
         prior_shift=prior_shift, n_bins=n_bins, n_resamples=n_resamples,
         confidence_level=confidence_level, rng=rng, title=title, progress=progress,
+        groups=groups,
     )

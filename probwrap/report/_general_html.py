@@ -6,6 +6,7 @@ from typing import Any
 
 import numpy as np
 
+from ._common import draw_figure, figure_notes
 from ._general import MulticlassReportContent
 from ._html_parts import (
     _figure,
@@ -17,34 +18,48 @@ from ._html_parts import (
     metric_rows_html,
     notes_box,
 )
+from ._promises import late_label_html
 
 __all__ = ["general_figures", "general_sections", "general_glance"]
 
 
 def general_figures(c: MulticlassReportContent) -> dict[str, str]:
-    """Top-label reliability diagram, action shares per rule, class shares (when estimated)."""
+    """Top-label reliability diagram, action shares per rule, class shares (when estimated).
+
+    Warnings met while drawing a figure become notes about it (:func:`._common.draw_figure`).
+    """
     from ..plot import ActionShareDisplay, ClassPriorDisplay, ReliabilityDiagram
 
     figs: dict[str, str] = {}
-    rel = ReliabilityDiagram.from_predictions(
-        c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
-        confidence_level=c.confidence_level,
-    )
-    figs["reliability"] = figure_to_svg(rel.figure_, "rel")
-    if c.rules:
+
+    def reliability() -> str:
+        rel = ReliabilityDiagram.from_predictions(
+            c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
+            confidence_level=c.confidence_level,
+        )
+        return figure_to_svg(rel.figure_, "rel")
+
+    def actions() -> str:
         disp = ActionShareDisplay(
             shares=np.vstack([r.shares for r in c.rules]),
             mean_cost=[r.mean_cost for r in c.rules], rule_names=[r.label for r in c.rules],
             action_names=c.action_names, capacity=c.capacity,
         ).plot()
-        figs["actions"] = figure_to_svg(disp.figure_, "act")
-    if c.target_prior is not None:
+        return figure_to_svg(disp.figure_, "act")
+
+    def class_prior() -> str:
         disp = ClassPriorDisplay(
             source_prior=c.source_prior, target_prior=c.target_prior,
             interval=c.target_interval, class_names=c.class_names,
             shift_pvalue=c.shift_pvalue,
         ).plot()
-        figs["class_prior"] = figure_to_svg(disp.figure_, "cprior")
+        return figure_to_svg(disp.figure_, "cprior")
+
+    draw_figure(c, figs, "reliability", reliability)
+    if c.rules:
+        draw_figure(c, figs, "actions", actions)
+    if c.target_prior is not None:
+        draw_figure(c, figs, "class_prior", class_prior)
     return figs
 
 
@@ -69,6 +84,7 @@ def _calibration(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         "averages the one-vs-rest binned error of every class (Kull et al. 2019).</p>",
         ece_note(c),
         notes_box([n for n in c.notes if n.key.startswith("metric:")], "notes-calibration"),
+        late_label_html(c),
     ]
     if c.calibration_method is not None:
         parts.append(f"<p>Calibration map in use: <b>{_text(c.calibration_method)}</b>.</p>")
@@ -77,6 +93,7 @@ def _calibration(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         f"Top-label reliability diagram: accuracy of the most probable class against its mean "
         f"probability in {c.n_bins} equal-width bins, with {level} Wilson (1927) intervals; "
         "rows per bin below.",
+        figure_notes(c, "reliability"),
     ))
     parts.append("</section>")
     return "".join(parts)
@@ -180,6 +197,7 @@ def _decisions(c: MulticlassReportContent, figures: dict[str, str]) -> str:
             "fig-actions", figures["actions"],
             "Share of labelled rows given each action under each rule, with the rule's mean cost "
             "per row at the right" + (" and the capacity marked." if c.capacity else "."),
+            figure_notes(c, "actions"),
         ))
     parts.append("</section>")
     return "".join(parts)
@@ -227,6 +245,7 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
             "fig-class-prior", figures["class_prior"],
             f"Share of each class in the labelled rows and estimated in the unlabelled rows, with "
             f"{level} intervals.",
+            figure_notes(c, "class_prior"),
         ))
     parts.append("</section>")
     return "".join(parts)

@@ -46,6 +46,7 @@ class ActionRuleRow:
     within_capacity: bool | None = None
     target_shares: np.ndarray | None = None
     target_expected_cost: float | None = None
+    actions: np.ndarray | None = None  # the action of each labelled row (column of the costs)
 
 
 @dataclass
@@ -183,7 +184,7 @@ def general_rules(content, proba, y_index, w, matrix, per_row, policy, policy_co
                              row_costs=per_row, sample_weight=w)
         shares = _shares(acts, n_act, w)
         within = None if cap is None else bool(shares[cap[0]] <= cap[1] * _CAP_SLACK)
-        content.rules.append(ActionRuleRow(key, label, cost, shares, within))
+        content.rules.append(ActionRuleRow(key, label, cost, shares, within, actions=acts))
         fns.append((key, fn))
     return fns, rc
 

@@ -12,7 +12,9 @@ from ..plot import (
     ReliabilityDiagram,
 )
 from ._alarm_chart import alarm_svg
+from ._common import draw_figure, figure_notes
 from ._content import BAYES_NAME, HALF_NAME, ReportContent
+from ._general_groups import multiclass_group_section
 from ._general_html import general_figures, general_glance, general_sections
 from ._groups_html import group_section
 from ._html_parts import (
@@ -26,6 +28,8 @@ from ._html_parts import (
     notes_box,
     recommendation_box,
 )
+from ._page_css import PAGE_CSS as _CSS
+from ._promises import guarantee_html, late_label_html
 
 __all__ = ["render_html", "figure_to_svg", "CAUTIONS"]
 
@@ -47,49 +51,6 @@ CAUTIONS: tuple[str, ...] = (
     "the judgement of licensed professionals take precedence over this report.",
 )
 
-_CSS = """
-:root { --ink:#1f2a36; --paper:#fbfaf6; --rule:#d8d2c4; --accent:#0f6e74; --warm:#b8432f; }
-* { box-sizing: border-box; }
-body { margin:0; font-family: Georgia, 'DejaVu Serif', serif; color:var(--ink);
-       background:#f3f0e8; line-height:1.45; }
-header.pw-head { background:var(--ink); color:#f3f0e8; padding:1.4rem 2rem 1rem; }
-header.pw-head h1 { margin:0 0 .3rem; font-size:1.6rem; letter-spacing:.02em; }
-header.pw-head p { margin:0; font-size:.85rem; opacity:.85; }
-nav.pw-nav { background:#e8e2d4; padding:.5rem 2rem; font-size:.85rem; }
-nav.pw-nav a { color:var(--ink); margin-right:1.2rem; text-decoration:none;
-               border-bottom:2px solid var(--accent); }
-main { max-width:980px; margin:0 auto; padding:1rem 2rem 3rem; }
-section { background:var(--paper); border-left:5px solid var(--accent); margin:1.2rem 0;
-          padding:.8rem 1.4rem 1.2rem; }
-section#cautions { border-left-color:var(--warm); }
-h2 { font-size:1.2rem; margin:.4rem 0 .6rem; }
-h2 .pw-num { color:var(--accent); margin-right:.4rem; }
-.pw-glance { display:flex; flex-wrap:wrap; gap:.8rem; margin:.6rem 0; padding:0; }
-.pw-glance li { list-style:none; background:#fff; border:1px solid var(--rule);
-                padding:.5rem .8rem; min-width:10rem; }
-.pw-glance b { display:block; font-size:1.15rem; }
-table { border-collapse:collapse; margin:.6rem 0; font-size:.85rem;
-        font-family:'DejaVu Sans Mono', monospace; }
-th, td { border-bottom:1px solid var(--rule); padding:.25rem .6rem; text-align:right; }
-th:first-child, td:first-child { text-align:left; font-family:Georgia, serif; }
-thead th { border-bottom:2px solid var(--ink); }
-tr.pw-chosen td { background:#eaf4f1; font-weight:bold; }
-figure { margin:.8rem 0; }
-figure svg { max-width:100%; height:auto; display:block; background:#fff;
-             border:1px solid var(--rule); }
-figcaption { font-size:.8rem; margin-top:.3rem; }
-.pw-note { font-size:.82rem; color:#4a5561; }
-.pw-notes { background:#fff7e6; border:1px solid #e0b45a; padding:.4rem .9rem; margin:.6rem 0;
-             font-size:.82rem; }
-.pw-notes h3 { font-size:.9rem; margin:.2rem 0; }
-.pw-notes ul { margin:.2rem 0; padding-left:1.2rem; }
-.pw-recommend { background:#fff; border:2px solid var(--accent); margin:1rem 0;
-                padding:.6rem 1.2rem; }
-.pw-recommend h2 { margin:.2rem 0 .4rem; }
-tr.pw-recommended td:first-child::before { content:"\\25B6  "; color:var(--accent); }
-sup.pw-mark a { color:var(--warm); text-decoration:none; }
-footer { text-align:center; font-size:.75rem; color:#6b7480; padding:1rem; }
-"""
 
 
 def _class_pair(c: ReportContent) -> tuple[str, str]:
@@ -115,6 +76,7 @@ def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
         f"<tbody>{rows}</tbody></table>",
         ece_note(c),
         notes_box([n for n in c.notes if n.key.startswith("metric:")], "notes-calibration"),
+        late_label_html(c),
     ]
     if c.calibration_method is not None:
         parts.append(
@@ -134,6 +96,7 @@ def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
         "fig-reliability", figures["reliability"],
         f"Reliability diagram: observed frequency against mean forecast in {c.n_bins} "
         f"equal-width bins, with {level} Wilson (1927) intervals; rows per bin below.",
+        figure_notes(c, "reliability"),
     ))
     parts.append("</section>")
     return "".join(parts)
@@ -207,10 +170,14 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
             if target:
                 cells += [_share(r.target_flagged_share), _num(r.target_expected_cost)]
             body.append(f'<tr data-rule="{r.key}"{cls}>{"".join(cells)}</tr>')
+        n_columns = (4 + (c.capacity is not None) + 2 * bool(target))
+        unreachable_row, guarantee_text = guarantee_html(c, n_columns)
+        body.insert(1, unreachable_row)
         parts.append(
             f'<table id="rule-comparison"><thead>{head}</thead><tbody>{"".join(body)}'
             "</tbody></table>"
         )
+        parts.append(guarantee_text)
         parts.append(
             '<p class="pw-note">Mean cost per row is the realised cost on the labelled rows of '
             "this report. A cutoff searched on these same rows is optimistic there; prefer "
@@ -222,17 +189,20 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
             + "</p>"
         )
         parts.append(notes_box(
-            [n for n in c.notes if n.key in ("plugin", "cutoff", "capacity")],
+            [n for n in c.notes if n.key in ("plugin", "cutoff", "capacity")
+             or (n.key == "guarantee" and n.kind != "not computed")],  # said above
             "notes-decisions"))
         parts.append(_figure(
             "fig-cost", figures["cost"],
             f"Mean cost per row at every cutoff, with the {c.chosen_name}, its bootstrap "
             f"interval, the {BAYES_NAME} and the {HALF_NAME}.",
+            figure_notes(c, "cost"),
         ))
     parts.append(_figure(
         "fig-decision-curve", figures["decision_curve"],
         "Decision curve: net benefit TP/n \u2212 FP/n \u00b7 t/(1\u2212t) against threshold "
         "probability t (Vickers & Elkin 2006), with the act-on-all and act-on-none references.",
+        figure_notes(c, "decision_curve"),
     ))
     parts.append("</section>")
     return "".join(parts)
@@ -289,6 +259,7 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
                 "fig-prevalence", figures["prevalence"],
                 "Estimated prevalence per batch of unlabelled rows with bootstrap intervals, "
                 "against the source prevalence; circled batches fail the shift test.",
+                figure_notes(c, "prevalence"),
             ))
         if getattr(c, "alarm", None) is not None:
             parts.append(_alarm_text(c))
@@ -299,6 +270,7 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
                     f"against the source prevalence (k = {c.alarm.result.reference:g}); an "
                     "alarm fires when a sum crosses the dashed decision interval "
                     f"h = {c.alarm.result.decision_interval:g} and both sums restart.",
+                    figure_notes(c, "alarm"),
                 ))
     parts.append("</section>")
     return "".join(parts)
@@ -365,7 +337,8 @@ def make_figures(c: Any) -> dict[str, str]:
     of :mod:`probwrap.plot`; without it, from the built-in SVG renderer, so that a plain
     ``pip install .`` still writes a report with its figures (the multiclass report then shows
     its reliability diagram and tables; the action-share and class-share charts need
-    matplotlib).
+    matplotlib). Warnings met while drawing a figure are added to ``c.notes`` under
+    ``"figure:<key>"`` and shown under that figure (:func:`._common.draw_figure`).
     """
     try:
         import matplotlib  # noqa: F401
@@ -376,12 +349,15 @@ def make_figures(c: Any) -> dict[str, str]:
     if getattr(c, "kind", "binary") == "general":
         return general_figures(c)
     figs: dict[str, str] = {}
-    rel = ReliabilityDiagram.from_predictions(
-        c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
-        confidence_level=c.confidence_level, pos_label=1.0,
-    )
-    figs["reliability"] = figure_to_svg(rel.figure_, "rel")
-    if c.cost_matrix is not None:
+
+    def reliability() -> str:
+        rel = ReliabilityDiagram.from_predictions(
+            c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
+            confidence_level=c.confidence_level, pos_label=1.0,
+        )
+        return figure_to_svg(rel.figure_, "rel")
+
+    def cost() -> str:
         disp = CostCurveDisplay(
             result=c.cost_curve, plugin_cutoff=c.plugin, interval=c.cost_interval
         ).plot()
@@ -390,30 +366,40 @@ def make_figures(c: Any) -> dict[str, str]:
         # the legend names the cutoff as the table and the text do
         disp.chosen_line_.set_label(f"{c.chosen_name} {c.chosen_cutoff:.3f}")
         disp.ax_.legend(fontsize=7, frameon=False, loc="best")
-        figs["cost"] = figure_to_svg(disp.figure_, "cost")
-    dc = DecisionCurveDisplay.from_predictions(
-        c.y_true, c.y_prob, sample_weight=c.sample_weight, pos_label=1.0,
-        marked_threshold=c.chosen_cutoff,
-    )
-    if dc.marked_line_ is not None:
-        dc.marked_line_.set_label(f"{c.chosen_name} {c.chosen_cutoff:.3f}")
-        dc.ax_.legend(fontsize=7, frameon=False, loc="upper right")
-    figs["decision_curve"] = figure_to_svg(dc.figure_, "dc")
-    if c.batch_table is not None:
+        return figure_to_svg(disp.figure_, "cost")
+
+    def decision_curve() -> str:
+        dc = DecisionCurveDisplay.from_predictions(
+            c.y_true, c.y_prob, sample_weight=c.sample_weight, pos_label=1.0,
+            marked_threshold=c.chosen_cutoff,
+        )
+        if dc.marked_line_ is not None:
+            dc.marked_line_.set_label(f"{c.chosen_name} {c.chosen_cutoff:.3f}")
+            dc.ax_.legend(fontsize=7, frameon=False, loc="upper right")
+        return figure_to_svg(dc.figure_, "dc")
+
+    def prevalence() -> str:
         pd_ = PrevalenceDriftDisplay.from_table(
             c.batch_table, source_prevalence=c.source_prevalence
         )
-        figs["prevalence"] = figure_to_svg(pd_.figure_, "prev")
+        return figure_to_svg(pd_.figure_, "prev")
+
+    draw_figure(c, figs, "reliability", reliability)
+    if c.cost_matrix is not None:
+        draw_figure(c, figs, "cost", cost)
+    draw_figure(c, figs, "decision_curve", decision_curve)
+    if c.batch_table is not None:
+        draw_figure(c, figs, "prevalence", prevalence)
     if getattr(c, "alarm", None) is not None:
         # the CUSUM chart is drawn by the built-in renderer in both cases (no display object)
-        figs["alarm"] = alarm_svg(c.alarm, key="alarm")
+        draw_figure(c, figs, "alarm", alarm_svg, c.alarm, key="alarm")
     return figs
 
 
 def render_html(c: Any, figures: dict[str, str]) -> str:
     """The complete page."""
     if getattr(c, "kind", "binary") == "general":
-        body = general_sections(c, figures)
+        body = general_sections(c, figures) + multiclass_group_section(c)
     else:
         body = (_calibration_section(c, figures) + _decision_section(c, figures)
                 + _prevalence_section(c, figures) + group_section(c))

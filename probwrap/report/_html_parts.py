@@ -51,10 +51,12 @@ def _text(value: Any) -> str:
     return html.escape(str(value))
 
 
-def _figure(fig_id: str, svg: str, caption: str) -> str:
+def _figure(fig_id: str, svg: str, caption: str, notes: Any = ()) -> str:
+    """A figure with its caption and, right under it, the notes met while drawing it."""
     return (
         f'<figure class="pw-figure" id="{fig_id}">{svg}'
         f"<figcaption>{_text(caption)}</figcaption></figure>"
+        + notes_box(list(notes), f"notes-{fig_id}", "Notes on this figure")
     )
 
 

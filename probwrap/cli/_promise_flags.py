@@ -1,0 +1,217 @@
+"""Flags several verbs share: labels that arrive late, and a cutoff with a guarantee.
+
+Late labels (``cutoff``, ``report``, ``calibrate fit``): ``--time-column`` (how long each row
+has been observed), ``--event-column`` (1 when its event happened, 0 when not yet) and
+``--horizon`` (the outcome is "event within the horizon") replace ``--label-column``; the labels
+and inverse-probability-of-censoring weights of
+:func:`probwrap.late_labels.labels_at_horizon` go where the labels and weights would.
+
+Guarantee (``cutoff``, ``report``): ``--guarantee`` (which metric), ``--guarantee-target``,
+``--guarantee-confidence``, ``--guarantee-method``, the arguments of
+:func:`probwrap.decision.guaranteed_cutoff`.
+"""
+
+from __future__ import annotations
+
+import argparse
+from typing import Any
+
+import numpy as np
+
+from .._validation import plain
+from ._common import DataError, clean, shown
+from ._tables import numeric_column
+
+__all__ = ["add_late_label_flags", "late_label_columns", "read_late_labels",
+           "late_label_summary", "add_guarantee_flags", "guarantee_args", "level"]
+
+
+def level(text: str) -> float:
+    """A probability strictly between 0 and 1 (a confidence level, a target)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not 0.0 < value < 1.0:
+        raise argparse.ArgumentTypeError(f"must be in (0, 1); got {text}")
+    return value
+
+
+# -- late labels ----------------------------------------------------------------------------
+def add_late_label_flags(parser: argparse.ArgumentParser) -> None:
+    group = parser.add_argument_group(
+        "labels that arrive late (instead of --label-column)",
+        "The outcome 'event within --horizon', weighted for rows still open "
+        "(docs/late_labels.md).")
+    group.add_argument("--time-column", metavar="T",
+                       help="how long each row has been observed (until its event, or until "
+                       "now), in the unit of --horizon")
+    group.add_argument("--event-column", metavar="E",
+                       help="1 when the row's event happened at that time, 0 when not yet")
+    group.add_argument("--horizon", type=_positive, metavar="H",
+                       help="the outcome is 'the event happened within H'")
+
+
+def late_label_columns(args: argparse.Namespace, parser: argparse.ArgumentParser,
+                       ) -> list[str] | None:
+    """The two columns to read, or None without late labels; usage errors for half a set."""
+    given = {flag: getattr(args, name) for flag, name in (
+        ("--time-column", "time_column"), ("--event-column", "event_column"),
+        ("--horizon", "horizon"))}
+    if all(v is None for v in given.values()):
+        if args.label_column is None:
+            parser.error("give --label-column, or late labels (--time-column, --event-column "
+                         "and --horizon)")
+        return None
+    missing = [flag for flag, v in given.items() if v is None]
+    if missing:
+        parser.error(f"late labels need --time-column, --event-column and --horizon; missing "
+                     f"{', '.join(missing)}")
+    if args.label_column is not None:
+        parser.error("give either --label-column or late labels (--time-column, "
+                     "--event-column, --horizon), not both")
+    if getattr(args, "positive_label", None) is not None:
+        parser.error("--positive-label is for --label-column; with late labels the positive "
+                     "class is 'event within --horizon'")
+    return [args.time_column, args.event_column]
+
+
+def read_late_labels(frame: Any, args: argparse.Namespace, path: str) -> Any:
+    """:class:`~probwrap.late_labels.HorizonLabels` from the file's time and event columns."""
+    from probwrap.late_labels import labels_at_horizon
+
+    time = numeric_column(frame, args.time_column, path, flag="--time-column")
+    event = numeric_column(frame, args.event_column, path, flag="--event-column")
+    bad = ~np.isin(event, (0.0, 1.0))
+    if bad.any():
+        row = int(np.flatnonzero(bad)[0])
+        raise DataError(f"{path}: column {shown(args.event_column)}, row {row + 2} (counting "
+                        f"the header as row 1) holds {shown(event[row])}; events are 1 "
+                        "(happened) or 0 (not yet)")
+    try:
+        return labels_at_horizon(time, event.astype(int), args.horizon)
+    except ValueError as exc:
+        raise DataError(f"{path}: late labels: {clean(str(exc))}") from None
+
+
+def late_label_summary(hl: Any) -> dict[str, Any]:
+    """The JSON block that describes late labels."""
+    return {"horizon": float(hl.horizon), "open_rows": int(np.count_nonzero(hl.is_open)),
+            "open_share": float(hl.open_share),
+            "weighted_prevalence": float(np.average(hl.y, weights=hl.sample_weight))}
+
+
+def late_label_line(hl: Any) -> str:
+    """One line of text output about late labels."""
+    n = int(hl.is_open.shape[0])
+    return (f"late labels: event within {hl.horizon:g}; {int(np.count_nonzero(hl.is_open))} "
+            f"of {n} rows still open (weight 0), the others weighted by the inverse "
+            "probability of still being observed")
+
+
+__all__ += ["late_label_line", "add_alarm_flags", "promise_summary"]
+
+
+# -- prevalence alarm -----------------------------------------------------------------------
+def _nonnegative(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not (np.isfinite(value) and value >= 0):
+        raise argparse.ArgumentTypeError(f"must be a finite number >= 0; got {text}")
+    return value
+
+
+def _positive(text: str) -> float:
+    value = _nonnegative(text)
+    if value == 0:
+        raise argparse.ArgumentTypeError("must be greater than 0; got 0")
+    return value
+
+
+def add_alarm_flags(parser: argparse.ArgumentParser) -> None:
+    """``--alarm-reference`` and ``--alarm-decision-interval`` of the prevalence alarm."""
+    parser.add_argument(
+        "--alarm-reference", type=_nonnegative, default=0.5, metavar="K",
+        help="reference value k of the alarm, in standard errors: half the shift it should "
+        "catch fastest (default 0.5)",
+    )
+    parser.add_argument(
+        "--alarm-decision-interval", type=_positive, default=5.0, metavar="H",
+        help="decision interval h of the alarm, in standard errors: larger means fewer false "
+        "alarms and slower detection (default 5: about one false alarm in 465 batches)",
+    )
+
+
+# -- guarantee -------------------------------------------------------------------------------
+def add_guarantee_flags(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument(
+        "--guarantee", default=None,
+        choices=["recall", "precision", "false_positive_rate", "flagged_share"],
+        help="also find the least-cost cutoff certified to keep this metric at or above "
+        "(recall, precision) or at or below (false_positive_rate, flagged_share) "
+        "--guarantee-target on new rows",
+    )
+    parser.add_argument(
+        "--guarantee-target", type=level, default=None, metavar="X",
+        help="the floor or ceiling of --guarantee, e.g. 0.9",
+    )
+    parser.add_argument(
+        "--guarantee-confidence", type=level, default=0.9, metavar="LEVEL",
+        help="probability that the guarantee holds (default 0.9)",
+    )
+    parser.add_argument(
+        "--guarantee-method", default="high_probability",
+        choices=["high_probability", "expectation"],
+        help="high_probability (default): holds with --guarantee-confidence; expectation: "
+        "holds on average (not for precision)",
+    )
+
+
+def guarantee_args(args: argparse.Namespace) -> dict[str, Any] | None:
+    """The ``guarantee`` keyword arguments, or None; errors for a half-given guarantee."""
+    if args.guarantee is None:
+        if args.guarantee_target is not None:
+            raise DataError("--guarantee-target needs --guarantee (which metric).")
+        return None
+    if args.guarantee_target is None:
+        raise DataError(
+            f"--guarantee {args.guarantee} needs --guarantee-target (e.g. 0.9)."
+        )
+    return {"requirement": args.guarantee, "target": args.guarantee_target,
+            "confidence": args.guarantee_confidence, "method": args.guarantee_method}
+
+
+# -- the report verb's JSON summary of the three ----------------------------------------------
+def promise_summary(content, summary: dict) -> str:
+    """Guarantee, alarm and late labels in the JSON summary, and their words in the line."""
+    line = ""
+    g = content.guarantee
+    if g is not None:
+        summary["guarantee"] = {
+            "requirement": g.requirement, "target": g.target, "method": g.method,
+            "confidence": g.confidence, "cutoff": g.cutoff, "achieved": g.achieved,
+            "bound": g.bound, "p_value": g.p_value, "moved_the_cutoff": g.binding,
+            "unreachable": g.unreachable,
+        }
+        line += (f", guarantee unreachable ({g.promise})" if g.unreachable is not None else
+                 f", guaranteed cutoff {g.cutoff:.4f} ({g.promise}; bound {g.bound:.4f})")
+    a = getattr(content, "alarm", None)
+    if a is not None:
+        res = a.result
+        summary["alarm"] = {
+            "reference": float(res.reference), "decision_interval": float(res.decision_interval),
+            "alarms": [{"batch": plain(a.batches[i]), "direction":
+                        "up" if res.direction[j] > 0 else "down"}
+                       for j, i in enumerate(res.alarms)],
+            "first_alarm": None if a.first_batch is None else plain(a.first_batch),
+            "in_control_run_length": float(a.in_control_run_length),
+        }
+        line += (", no prevalence alarm" if a.first_batch is None else
+                 f", prevalence alarm after batch {a.first_batch}")
+    hl = getattr(content, "late_labels", None)
+    if hl is not None:
+        summary["late_labels"] = late_label_summary(hl)
+        line += f"; {int(hl.is_open.sum())} rows still open at horizon {hl.horizon:g}"
+    return line

@@ -1,0 +1,121 @@
+"""The multiclass report's "By group" section (``groups=`` / ``--group-column``).
+
+Reference check: each group's log loss equals ``sklearn.metrics.log_loss`` on the group's rows.
+The Brier score is checked against its definition written out (Brier 1950: the sum over classes
+of the squared difference between probability and outcome, averaged over rows). The rest are
+consistency tests: the per-group numbers are probwrap's own metrics on the group's rows, the
+cost and shares those of the rule in use, weight 2 equals a duplicated row.
+"""
+
+import json
+import re
+
+import numpy as np
+import pandas as pd
+import pytest
+from sklearn.metrics import log_loss as sk_log_loss
+
+from probwrap.cli import main
+from probwrap.datasets import make_parcels
+from probwrap.metrics import expected_calibration_error
+from probwrap.report import build_report
+from probwrap.report._general_groups import multiclass_by_group
+
+COSTS = np.array([[0.0, 4.0, 12.0], [20.0, 4.0, 12.0], [60.0, 64.0, 12.0]])
+ACTIONS = ["ship", "repack", "hold"]
+
+
+@pytest.fixture(scope="module")
+def three():
+    d = make_parcels(3000, n_outcomes=3, random_state=3)
+    size = np.select([d.data[:, 0] < 1.5, d.data[:, 0] < 6.0], ["light", "medium"], "heavy")
+    return d, size
+
+
+def test_group_rows_are_the_report_metrics_on_each_group(three):
+    d, size = three
+    content, page = build_report(y_true=d.target, y_prob=d.true_proba, costs=COSTS,
+                                 action_names=ACTIONS, groups=size, n_resamples=20)
+    checks = content.group_checks
+    rule = content.rules[0]  # the rule in use
+    by = {c.group: c for c in checks.groups}
+    assert set(by) == {"light", "medium", "heavy"}
+    for name, c in by.items():
+        rows = size == name
+        y, p = d.target[rows], d.true_proba[rows]
+        # reference: scikit-learn's log loss on the group's rows
+        assert c.log_loss == pytest.approx(sk_log_loss(y, p, labels=[0, 1, 2]), rel=1e-12)
+        # Brier (1950) written out: sum over classes, mean over rows
+        onehot = np.eye(3)[y]
+        assert c.brier == pytest.approx(np.mean(np.sum((p - onehot) ** 2, axis=1)), rel=1e-12)
+        assert c.top_label_error == pytest.approx(
+            expected_calibration_error(y, p, n_bins=10), rel=1e-12)
+        acts = rule.actions[rows]
+        assert c.mean_cost == pytest.approx(np.mean(COSTS[y, acts]), rel=1e-12)
+        np.testing.assert_allclose(c.action_shares, np.bincount(acts, minlength=3) / rows.sum(),
+                                   rtol=1e-12)
+        assert c.weight == rows.sum()
+    # the light parcels hold fewer than 10 broken ones: listed, marked, left out of the gaps
+    assert np.sum((size == "light") & (d.target == 2)) < 10
+    assert not by["light"].judged and by["medium"].judged and by["heavy"].judged
+    assert checks.groups[-1].group == "light"
+    assert all("light" not in (g.highest, g.lowest) for g in checks.gaps)
+    assert any(n.startswith("light: too small to judge") for n in checks.notes)
+    # the overall row is the report's rule cost
+    assert checks.overall.mean_cost == pytest.approx(rule.mean_cost, rel=1e-12)
+    # on the page: a section in the nav, a row per group, the small group marked
+    assert 'href="#by-group"' in page
+    light = re.search(r'<tr data-group="light">(.*?)</tr>', page).group(1)
+    assert "too small to judge" in light
+    assert "share hold" in page
+
+
+def test_gaps_are_largest_first_and_weights_are_frequencies(three):
+    d, size = three
+    y, p = d.target[:600], d.true_proba[:600]
+    g = size[:600]
+    acts = np.argmin(p @ COSTS, axis=1)
+    cost = COSTS[y, acts]
+    w = np.where(np.arange(600) % 3 == 0, 2.0, 1.0)
+    weighted = multiclass_by_group(y, p, g, sample_weight=w, actions=acts, row_cost=cost,
+                                   action_names=tuple(ACTIONS), n_resamples=0, min_rows=50,
+                                   min_events=1)
+    dup = np.r_[np.arange(600), np.flatnonzero(w == 2.0)]
+    copied = multiclass_by_group(y[dup], p[dup], g[dup], actions=acts[dup], row_cost=cost[dup],
+                                 action_names=tuple(ACTIONS), n_resamples=0, min_rows=50,
+                                 min_events=1)
+    a = {c.group: c for c in weighted.groups}
+    b = {c.group: c for c in copied.groups}
+    for name in a:
+        for field in ("weight", "top_label_error", "classwise_error", "brier", "log_loss",
+                      "mean_cost", "largest_share_gap"):
+            assert getattr(a[name], field) == pytest.approx(getattr(b[name], field), rel=1e-9)
+    # ordered by the gap relative to the overall value (max(|overall|, 0.05))
+    scaled = []
+    for gap in weighted.gaps:
+        whole = (weighted.overall.action_shares[ACTIONS.index(gap.metric[6:])]
+                 if gap.metric.startswith("share ") else getattr(weighted.overall, gap.metric))
+        scaled.append(gap.gap / max(abs(whole), 0.05))
+    assert scaled == sorted(scaled, reverse=True) and len(scaled) >= 2
+
+
+def test_cli_group_column_with_class_columns(three, tmp_path, capsys, monkeypatch):
+    import probwrap.cli._progress as common
+
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+    d, size = three
+    frame = pd.DataFrame(d.true_proba, columns=d.target_names)
+    frame["outcome"] = [d.target_names[k] for k in d.target]
+    frame["size"] = size
+    frame.to_csv(tmp_path / "three.csv", index=False)
+    out = tmp_path / "r.html"
+    code = main(["report", "--scores", str(tmp_path / "three.csv"), "--class-columns",
+                 ",".join(d.target_names), "--label-column", "outcome", "--cost-matrix",
+                 ";".join(",".join(str(v) for v in row) for row in COSTS), "--actions",
+                 ",".join(ACTIONS), "--group-column", "size", "--resamples", "20",
+                 "--out", str(out), "--format", "json"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    assert json.loads(captured.out)["n_classes"] == 3
+    page = out.read_text(encoding="utf-8")
+    assert page.count('<tr data-group="') == 4  # three sizes and "all"
