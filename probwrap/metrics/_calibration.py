@@ -48,8 +48,13 @@ def _bin_edges(values: np.ndarray, w: np.ndarray, n_bins: int, strategy: str) ->
     v = v[order]
     cum = np.cumsum(w[keep][order])
     total = cum[-1]
-    # compare cum * n_bins with j * total so integer weights give exact comparisons
-    first_above = np.searchsorted(cum * n_bins, np.arange(1, n_bins) * total, side="right")
+    # compare cum * n_bins with j * total so integer weights give exact comparisons; a relative
+    # slack of 1e-12 counts a cumulative share equal to j / n_bins up to rounding as equal, so
+    # that scaling all weights (normalised to sum 1, or times 1e-3) cannot move a row across an
+    # edge (integer weights differ by at least one part in total * n_bins, far above it)
+    first_above = np.searchsorted(
+        cum * n_bins, np.arange(1, n_bins) * total * (1.0 + 1e-12), side="right"
+    )
     inner = v[np.minimum(first_above, v.shape[0] - 1)]
     return np.concatenate(([v[0]], inner, [v[-1]]))
 
