@@ -17,7 +17,7 @@ from scipy.stats import binomtest
 from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 
-from probwrap import CostPolicyWrapper
+from probwrap import CostPolicyWrapper, PriorShiftWrapper
 from probwrap.datasets import make_parcels
 from probwrap.decision import guaranteed_cutoff
 from probwrap.late_labels import labels_at_horizon
@@ -172,3 +172,47 @@ def test_late_label_arguments_are_checked(parcels):
     with pytest.raises(ValueError, match="not both"):
         build_report(y_true=parcels.target, y_prob=p, time=np.ones(3000),
                      event=np.zeros(3000), horizon=1, n_resamples=20)
+
+
+def test_recommendation_keeps_a_certified_promise(parcels):
+    # a binding recall promise: the recommendation is the certified cutoff, not a cheaper rule
+    y, p = parcels.target, parcels.true_proba[:, 1]
+    ask = {"requirement": "recall", "target": 0.97, "confidence": 0.9}
+    content, page = build_report(y_true=y, y_prob=p, costs=COSTS, n_resamples=20,
+                                 guarantee=ask)
+    r = content.recommendation
+    assert content.guarantee.binding
+    assert r.key == "guarantee" and r.cutoff == content.guarantee.cutoff
+    assert "certified to keep it" in r.reasons[0]
+    assert _value(page, "recommended-cutoff") == content.guarantee.cutoff
+    # the promise holds on the rows the recommendation acts on
+    assert np.mean(p[y == 1] > r.cutoff) >= 0.97
+
+
+def test_recommendation_says_when_no_rule_keeps_the_promise(parcels):
+    y, p = parcels.target, parcels.true_proba[:, 1]
+    with pytest.warns(UserWarning, match="No cutoff"):
+        content, _ = build_report(y_true=y, y_prob=p, costs=COSTS, n_resamples=20,
+                                  guarantee={"requirement": "precision", "target": 0.99})
+    r = content.recommendation
+    assert r.key != "guarantee"
+    assert "does NOT keep it" in r.reasons[0]
+
+
+def test_recall_promise_is_not_moved_to_a_new_prevalence():
+    # under a change of prevalence alone, the recall of a fixed cutoff is unchanged, so the
+    # certified cutoff is kept rather than moved (Saerens et al. 2002 would move a cost cutoff)
+    labelled = make_parcels(4000, random_state=11)
+    winter = make_parcels(12000, season="winter", random_state=12)
+    model = LogisticRegression(max_iter=1000).fit(labelled.data, labelled.target)
+    shift = PriorShiftWrapper(FrozenEstimator(model), random_state=0, n_resamples=20)
+    shift.fit(labelled.data, labelled.target).adapt(winter.data)
+    p = model.predict_proba(labelled.data)[:, 1]
+    q = model.predict_proba(winter.data)[:, 1]
+    ask = {"requirement": "recall", "target": 0.9, "confidence": 0.9}
+    content, _ = build_report(y_true=labelled.target, y_prob=p, costs=COSTS, n_resamples=20,
+                              unlabelled_prob=q, prior_shift=shift, guarantee=ask)
+    r = content.recommendation
+    assert content.shift_pvalue < 0.01
+    assert r.key == "guarantee" and r.cutoff == content.guarantee.cutoff
+    assert any("cutoff is not moved" in t for t in r.reasons)

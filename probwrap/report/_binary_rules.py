@@ -124,7 +124,20 @@ def recommend(content, y01, p, w, q, E, notes) -> None:
     reasons: list[str] = []
     searched_here = "hindsight" not in rows and content.cost_curve is not None and (
         content.cutoff_source.startswith("the least-cost search"))
-    if content.plugin is not None and abs(content.plugin - content.chosen_cutoff) > 1e-12:
+    promise = getattr(content, "guarantee", None)
+    kept = promise is not None and promise.cutoff is not None and "guarantee" in rows
+    if kept:
+        # a promise binds the choice: only certified cutoffs may be recommended
+        key, name, cutoff = "guarantee", rows["guarantee"].label, float(promise.cutoff)
+        reasons.append(f"A promise was given ({promise.promise}): the least-cost cutoff "
+                       "certified to keep it is recommended; the cheaper rules in the table are "
+                       "not certified to keep it.")
+    elif promise is not None:
+        reasons.append(f"No cutoff can be certified to keep the promise ({promise.promise}); "
+                       "the rule recommended below does NOT keep it. "
+                       f"{promise.unreachable or ''}".rstrip())
+    if not kept and content.plugin is not None and (
+            abs(content.plugin - content.chosen_cutoff) > 1e-12):
         diff, se = _paired_difference(y01, p, content.sample_weight, matrix,
                                       content.chosen_cutoff, content.plugin)
         said = (f"on the labelled rows the {chosen.label} costs {diff:+.4g} per row against "
@@ -146,13 +159,26 @@ def recommend(content, y01, p, w, q, E, notes) -> None:
             reasons.append(f"{said[0].upper()}{said[1:]}; the {chosen.label} is kept "
                            + ("(it also corrects for miscalibration seen on held-out "
                               "predictions)." if diff <= 0 or diff <= 2 * se else "."))
-    else:
+    elif not kept:
         reasons.append(f"The {name} is {content.cutoff_source}.")
     basis = "labelled"
     base_cutoff = cutoff
     if q is not None and E is not None and content.shift_pvalue is not None:
         src, tgt = content.source_prevalence, content.target_prevalence
-        if content.shift_pvalue < 0.01 and 0 < cutoff < 1:
+        if kept and content.shift_pvalue < 0.01:
+            if promise.requirement in ("recall", "false_positive_rate"):
+                reasons.append(f"The prevalence of the unlabelled rows is estimated at {tgt:.4f} "
+                               f"against {src:.4f}; the cutoff is not moved: under a change of "
+                               f"prevalence alone the {promise.requirement.replace('_', ' ')} "
+                               "of a fixed cutoff does not change, so the promise still holds "
+                               "there, while moving the cutoff would void its certificate.")
+            else:
+                reasons.append(f"The prevalence of the unlabelled rows is estimated at {tgt:.4f} "
+                               f"against {src:.4f}; the {promise.requirement.replace('_', ' ')} "
+                               "of a fixed cutoff changes with the prevalence, so the "
+                               "certificate from the labelled rows does not carry over: "
+                               "certify again on labelled rows of the new period.")
+        elif content.shift_pvalue < 0.01 and 0 < cutoff < 1:
             cutoff = float(shift_cutoff(cutoff, src, tgt))
             key = "adapted" if key == "chosen" else key + "_adapted"
             name = f"{name}, moved to the estimated prevalence"
@@ -179,6 +205,10 @@ def recommend(content, y01, p, w, q, E, notes) -> None:
                        f"{cap_cut:.4f} acts on the rows with the highest probabilities up to "
                        "the capacity; with calibrated probabilities no other choice of that "
                        "many rows has a lower expected cost.")
+        if kept:
+            reasons.append("Holding to the capacity lowers the share acted on below what the "
+                           "certified cutoff needs: the promise is then not kept. Choose "
+                           "between the capacity and the promise.")
         key, name, cutoff = "capacity", CAPACITY_NAME, float(cap_cut)
         content.rules.insert(2, rule_row(key, name, cutoff, y01, p, matrix,
                                           content.sample_weight, cap))
