@@ -150,6 +150,19 @@ def binomial_tail_pvalue(losses: Any, n: Any, alpha: float) -> np.ndarray:
     return out
 
 
+def _miss_allowance(confidence: Any) -> float:
+    """``delta = 1 - confidence`` after checking ``confidence`` is a number in (0, 1)."""
+    try:
+        c = float(confidence)
+    except (TypeError, ValueError) as exc:
+        raise ValueError(
+            f"`confidence` must be a number in (0, 1); got {plain(confidence)!r}."
+        ) from exc
+    if isinstance(confidence, bool) or not 0.0 < c < 1.0:
+        raise ValueError(f"`confidence` must be a number in (0, 1); got {plain(confidence)!r}.")
+    return 1.0 - c
+
+
 def _check_requirement(requirement: Any, target: Any, method: Any, confidence: Any):
     if requirement not in GUARANTEE_REQUIREMENTS:
         raise ValueError(
@@ -172,15 +185,7 @@ def _check_requirement(requirement: Any, target: Any, method: Any, confidence: A
             )
         delta = None
     else:
-        try:
-            c = float(confidence)
-        except (TypeError, ValueError) as exc:
-            raise ValueError(
-                f"`confidence` must be a number in (0, 1); got {plain(confidence)!r}."
-            ) from exc
-        if isinstance(confidence, bool) or not 0.0 < c < 1.0:
-            raise ValueError(f"`confidence` must be a number in (0, 1); got {plain(confidence)!r}.")
-        delta = 1.0 - c
+        delta = _miss_allowance(confidence)
     floor = GUARANTEE_REQUIREMENTS[requirement]
     alpha = 1.0 - t if floor else t
     return t, alpha, delta

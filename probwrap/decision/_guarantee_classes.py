@@ -45,6 +45,7 @@ import numpy as np
 from .._validation import check_sample_weight, plain
 from ._guarantee import (
     GuaranteeUnreachableError,
+    _miss_allowance,
     _upper_risk,
     binomial_tail_pvalue,
 )
@@ -224,15 +225,7 @@ def guaranteed_class_offsets(
             )
         delta = None
     else:
-        try:
-            c = float(confidence)
-        except (TypeError, ValueError) as exc:
-            raise ValueError(
-                f"`confidence` must be a number in (0, 1); got {plain(confidence)!r}."
-            ) from exc
-        if isinstance(confidence, bool) or not 0.0 < c < 1.0:
-            raise ValueError(f"`confidence` must be a number in (0, 1); got {plain(confidence)!r}.")
-        delta = 1.0 - c
+        delta = _miss_allowance(confidence)
 
     mask = np.zeros(k, dtype=bool)
     mask[list(floors)] = True
