@@ -110,7 +110,11 @@ def _binary_targets(y: Any, n: int) -> np.ndarray:
         raise ValueError(f"`y` must be 1-d of shape (n,); got shape {arr.shape}.")
     if arr.dtype.kind == "b":
         arr = arr.astype(np.int8)
-    if arr.dtype.kind not in "iuf" or not np.all((arr == 0) | (arr == 1)):
+    if arr.dtype.kind in "iu":  # (two reductions, no temporaries)
+        binary = arr.size == 0 or (int(arr.min()) >= 0 and int(arr.max()) <= 1)
+    else:
+        binary = arr.dtype.kind == "f" and bool(np.all((arr == 0) | (arr == 1)))
+    if not binary:
         # (a set, not np.unique: labels of mixed types cannot be sorted)
         seen = sorted({repr(plain(v)) for v in arr.tolist()})[:5]
         raise ValueError(
@@ -120,34 +124,128 @@ def _binary_targets(y: Any, n: int) -> np.ndarray:
     return arr.astype(np.intp, copy=False)
 
 
+_MAGNITUDE = np.int64(0x7FFF_FFFF_FFFF_FFFF)
+_HALF_RANGE = np.int64(511 << 52)  # bit pattern of 2.0**-512: scaled scores stay below it
+
+
+def _subnormals_compare() -> bool:
+    """Whether the CPU compares subnormal doubles as themselves (no denormals-are-zero mode)."""
+    return bool(np.array(5e-324) > np.array(0.0))
+
+
+def _packed_order(s: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
+    """The scores in ascending order and their classes (0/1, intp), from ONE plain sort.
+
+    Each row becomes one 64-bit key, order-preserving in the score, that carries the class in
+    its lowest bit, so one ``np.sort`` of the keys (the fast sort: no index) orders the rows by
+    score, with the negatives before the positives among tied scores (the order of the two-run
+    merge, so the cumulative sums are the same). The keys are exact:
+
+    * scores in [0, 1.5) (probabilities): the IEEE bit pattern of a non-negative double is
+      order-preserving as an integer and below ``2**62``, so ``(bits << 1) | class`` fits 63 bits
+      (the shift drops the sign bit of -0.0: it keys as 0.0, the score it equals);
+    * any other scores are first scaled by a power of two into ``(-2**-512, 2**-512)`` (exact
+      unless a nonzero score would fall below the smallest normal double, which happens only
+      when the scores span more than about 510 binary orders of magnitude: then None is
+      returned and the caller merges per class), -0.0 is made 0.0, the bit pattern is mapped to
+      an order-preserving signed integer (magnitude bits flipped for negatives) and shifted to
+      be non-negative; twice that plus the class is again below ``0x7FF0 << 48``.
+
+    Either way the keys, read as doubles, are finite and non-negative, whose order as doubles
+    is their order as integers; NumPy sorts doubles faster than integers, so they are sorted as
+    doubles (as integers if the CPU flushes subnormals to zero in comparisons). Returns None
+    when the scores cannot be keyed exactly or the platform is not 64-bit IEEE.
+    """
+    if s.dtype != np.float64 or y.dtype != np.intp or np.dtype(np.intp).itemsize != 8:
+        return None
+    lo, hi = float(s.min()), float(s.max())
+    as_doubles = _subnormals_compare()
+    if lo >= 0.0 and hi < 1.5:
+        key = s.view(np.uint64) << np.uint64(1)
+        key |= y.view(np.uint64)
+        key = key.view(np.int64)
+        key.view(np.float64).sort() if as_doubles else key.sort()
+        label = key & np.int64(1)
+        key >>= np.int64(1)
+        return key.view(np.float64), label
+    # big * 2**k < 2**-512; k in [-1536, 561], applied as two representable powers of two
+    k = -512 - int(np.frexp(max(-lo, hi))[1])
+    steps = [float(np.ldexp(1.0, p)) for p in (max(k, -1000), k - max(k, -1000))]
+    v = s * steps[0]
+    if steps[1] != 1.0:
+        v *= steps[1]
+    v += 0.0  # -0.0 + 0.0 is 0.0; every other value is unchanged
+    key = v.view(np.int64)
+    del v
+    flip = key >> np.int64(63)  # -1 for negative scores, 0 otherwise
+    flip &= _MAGNITUDE
+    key ^= flip  # order-preserving: negatives become -(magnitude) - 1
+    del flip
+    key += _HALF_RANGE  # now in [0, 2**62 - 2**53)
+    key <<= np.int64(1)
+    key |= y
+    key.view(np.float64).sort() if as_doubles else key.sort()
+    # a scaled score below the smallest normal double may have been rounded: any key of a
+    # nonzero subnormal, or more zeros after scaling than before, leaves the order unproven,
+    # and such scores are left to the exact merge
+    zero = 2 * int(_HALF_RANGE)
+    first, zeros, past_zeros, past = np.searchsorted(
+        key, [zero - 2**53, zero, zero + 2, zero + 2**53 + 2], side="left"
+    )
+    n_zero = int(past_zeros - zeros)
+    if int(past - first) > n_zero or (n_zero and n_zero != int(np.count_nonzero(s == 0.0))):
+        return None
+    label = key & np.int64(1)
+    key >>= np.int64(1)
+    key -= _HALF_RANGE
+    flip = key >> np.int64(63)
+    flip &= _MAGNITUDE
+    key ^= flip
+    del flip
+    ss = key.view(np.float64)
+    for step in reversed(steps):  # exact powers of two, back to the original finite values
+        if step != 1.0:
+            ss *= 1.0 / step
+    return ss, label
+
+
 def _search_plain_rows(
     s: np.ndarray, y: np.ndarray, matrix: np.ndarray, cap: float | None, bounds
 ) -> CutoffSearchResult:
     """:func:`_search_rows` for unweighted rows and one cost matrix, near the cost of one sort.
 
-    The scores of each class are sorted separately with plain sorts (no index), then the two
-    sorted runs are merged: a stable ``argsort`` of the two runs (one linear merge) tells which
-    merged entries are positives and, gathered through, gives the merged scores. No per-row
-    index into the original rows is needed. The flagged shares are built only once the sorted
-    scores are freed (the capacity check reads the few shares it needs), so that the peak
-    memory stays near the three arrays of the returned curve.
+    The rows are put in score order with their classes by one plain sort of packed keys
+    (:func:`_packed_order`). Where the scores cannot be packed exactly, the scores of each
+    class are sorted separately with plain sorts (no index), then the two sorted runs are
+    merged: a stable ``argsort`` of the two runs (one linear merge) tells which merged entries
+    are positives and, gathered through, gives the merged scores. Either way the tied rows come
+    negatives first, so the cumulative sums are the same. No per-row index into the original
+    rows is needed. The flagged shares are built only once the sorted scores are freed (the
+    capacity check reads the few shares it needs), so that the peak memory stays near the three
+    arrays of the returned curve.
     """
     n = s.shape[0]
-    positive = y == 1
-    n_pos = int(np.count_nonzero(positive))
+    n_pos = int(np.count_nonzero(y))
     n_neg = n - n_pos
-    runs = np.empty(n)
-    part = s[np.flatnonzero(~positive)]
-    part.sort()
-    runs[:n_neg] = part
-    part = s[np.flatnonzero(positive)]
-    part.sort()
-    runs[n_neg:] = part
-    del positive, part
-    order = np.argsort(runs, kind="stable")  # two sorted runs: one linear merge
-    ss = runs[order]  # the merged scores (a gather along two monotone runs)
-    is_pos = order >= n_neg
-    del order, runs
+    packed = _packed_order(s, y)
+    if packed is not None:
+        ss, label = packed
+        del packed
+    else:
+        positive = y == 1
+        runs = np.empty(n)
+        part = s[np.flatnonzero(~positive)]
+        part.sort()
+        runs[:n_neg] = part
+        part = s[np.flatnonzero(positive)]
+        part.sort()
+        runs[n_neg:] = part
+        del positive, part
+        order = np.argsort(runs, kind="stable")  # two sorted runs: one linear merge
+        ss = runs[order]  # the merged scores (a gather along two monotone runs)
+        label = order >= n_neg
+        label = label.view(np.int8)  # (0/1: indexes the two per-class steps below)
+        del order, runs
     last = np.empty(n, dtype=bool)
     np.not_equal(ss[1:], ss[:-1], out=last[:-1])
     last[-1] = True
@@ -160,22 +258,28 @@ def _search_plain_rows(
         del last
         u, m, ends = ss, n, None
         del ss
-        cost = np.empty(n + 1)
-        step = cost[1:]  # filled and summed in place
     else:
         ends = np.flatnonzero(last)
         del last
         m = ends.shape[0]
         u = ss[ends]
         del ss
-        cost = np.empty(m + 1)
-        step = np.empty(n)
-    # (filled by mask in place: a look-up table indexed by the flags would make an index array)
-    step.fill(d_neg)
-    np.copyto(step, d_pos, where=is_pos)
-    del is_pos
-    np.cumsum(step, out=step)
-    if ends is not None:
+    cost = np.empty(m + 1)
+    if label.dtype == np.int64:
+        # each row's step, d_neg or d_pos, written over its class in place: the bit pattern
+        # of d_neg, with the bits in which d_pos differs flipped where the class is 1
+        neg_bits, pos_bits = (int(b) for b in np.array([d_neg, d_pos]).view(np.int64))
+        np.negative(label, out=label)  # 0, or -1 (every bit set)
+        label &= np.int64(neg_bits ^ pos_bits)
+        label ^= np.int64(neg_bits)
+        step = label.view(np.float64)
+    else:
+        step = np.take(np.array([d_neg, d_pos]), label)
+    del label
+    if ends is None:
+        np.cumsum(step, out=cost[1:])
+    else:
+        np.cumsum(step, out=step)
         np.take(step, ends, out=cost[1:])
     del step
     cost[0] = 0.0
@@ -332,7 +436,9 @@ def search_cutoff(
 
     Notes
     -----
-    Cost is O(n log n): one ``argsort`` and a few cumulative sums. Where several neighbouring
+    Cost is O(n log n): for unweighted rows with one cost matrix, one plain sort of 64-bit keys
+    that carry each row's class in the lowest bit; with ``sample_weight`` or per-row costs, one
+    ``argsort``; then a few cumulative sums. Where several neighbouring
     decisions share the minimal cost the optimum is a flat interval; ``flat`` is set and the
     middle of the widest such interval is returned. Means are per unit of weight.
 
