@@ -34,7 +34,7 @@ SCORE_SETS = {
 def _both(monkeypatch, s, y, costs, **kw):
     packed = search_cutoff(s, y, costs, **kw)
     with monkeypatch.context() as m:
-        m.setattr(cutoff_module, "_packed_order", lambda s, y: None)
+        m.setattr(cutoff_module, "_packed_order", lambda *args: None)
         merged = search_cutoff(s, y, costs, **kw)
     return packed, merged
 
@@ -106,3 +106,26 @@ def test_packed_costs_against_direct_evaluation_of_every_cutoff():
     for t, c in zip(res.cutoffs, res.costs, strict=True):
         direct = np.where(s > t, C[y, 1], C[y, 0]).mean()
         assert c == pytest.approx(direct, rel=1e-12, abs=1e-15)
+
+
+@pytest.mark.parametrize("make", [
+    lambda rng, n: rng.random(n),
+    lambda rng, n: rng.choice(np.linspace(0, 1, 9), n),  # ties: the decision ends are kept
+    lambda rng, n: rng.normal(size=n) * 3,
+])
+@pytest.mark.parametrize("capacity", [None, 0.2])
+@pytest.mark.parametrize("y_dtype", [int, np.int8, bool])
+def test_thinned_search_equals_thinning_the_full_curve(make, capacity, y_dtype):
+    # Consistency: the wrapper's thinned search (cutoffs and shares computed at the kept
+    # decisions only) against thinning the full curve afterwards.
+    rng = np.random.default_rng(5)
+    s = make(rng, 3000)
+    y = (rng.random(3000) < 0.3).astype(y_dtype)
+    costs = {"fp": 0.3, "fn": 2.1}
+    for bounds in (None, (s.min() - 1.0, s.max() + 1.0)):
+        full = search_cutoff(s, y, costs, capacity=capacity, score_bounds=bounds)
+        want = cutoff_module._thin_cost_curve(full, 50)
+        got = cutoff_module._search_cutoff(s, y, costs, None, capacity, bounds, max_points=50)
+        _assert_identical(got, want)
+        if np.unique(s).shape[0] + 1 > 50:
+            assert got.costs.shape[0] < 200
