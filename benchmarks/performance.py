@@ -184,7 +184,9 @@ def venn_abers(n: int) -> None:
            "linear stack algorithm of Vovk et al. (2015) moves the test point one group at a "
            "time, which keeps the diagram's points in order only when every group weighs at "
            "least the test point (not so for frequency weights), and is itself sequential "
-           "stack work, i.e. a Python loop over the distinct scores without a compiled core")
+           "stack work, i.e. a Python loop over the distinct scores without a compiled core; "
+           "the vectorised exact constructions found (divide and conquer, tangent searches on "
+           "the hulls) need about log2(m)^2 passes over the scores, as the present one does")
     mem = peak_memory(lambda: VennAbersMap().fit(s, y)) / s.nbytes
     record("5", f"VennAbersMap.fit peak memory / scores, {n:.0e} rows", mem, "<= 10", mem <= 10,
            "" if mem <= 10 else "the jump tables: log2(m) index arrays of m entries each")
