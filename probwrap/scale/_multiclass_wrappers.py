@@ -44,6 +44,15 @@ def _wrapper_scores_block(owner, template, Xb, yb, wb):
     )
 
 
+def _smallest_positive_block(owner, Xb, wb):
+    """Smallest non-zero probability of the rows of positive weight (inf when none)."""
+    values = np.asarray(getattr(owner.estimator_, owner.response_)(Xb), dtype=float)
+    w = _weights(wb, values.shape[0])
+    v = values[w > 0]
+    v = v[v > 0]
+    return float(v.min()) if v.size else np.inf
+
+
 def _temperature_terms(block, log_beta, total, counts=None):
     from ..calibration._temperature import _loss_slope
 
@@ -119,6 +128,13 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     blocks, lengths = _row_blocks(X)
     ys = _aligned_blocks(y, "y", X, blocks, lengths)
     ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
+    if owner.clip is None and owner.response_ == "predict_proba":
+        # clip_ from the data as in memory (CalibrationWrapper._choose_clip): one pass
+        call = dask.delayed(_smallest_positive_block, pure=True)
+        smallest = min(dask.compute(*[call(owner, b, wb) for b, wb in zip(blocks, ws, strict=True)]))
+        owner.clip_ = owner._clip_from_smallest(smallest)
+    else:
+        owner.clip_ = owner._choose_clip(np.empty((0, k)), np.empty(0))
     if isinstance(template, TemperatureMap):
         make = dask.delayed(_wrapper_scores_block, pure=True)
         parts = _persist(
@@ -203,28 +219,31 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     )
     if merged[0].total_weight <= 0:
         raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
-    maps: list = []
-    for tally in merged:
-        pos = tally.label_weight[1]
-        if pos <= 0 or pos >= tally.total_weight:
-            # absent from (or alone in) the rows: its smoothed share, (N_k + 1) / (N + k) by the
-            # rule of succession with the weights on the row-count scale (as in memory: kept
-            # when they sum to at least the number of rows, else Kish's effective size), so
-            # never exactly 0 or 1
-            total = tally.total_weight
-            n_eff = total if total >= tally.n_rows else tally.effective_rows
-            if not np.isfinite(n_eff) or n_eff <= 0:
-                n_eff = float(tally.n_rows)
-            maps.append(float((pos * (n_eff / total) + 1.0) / (n_eff + k)))
-            continue
-        s, yk, wk = tally.to_rows()
-        maps.append(clone(template).fit(owner._map_input(template, s), yk, sample_weight=wk))
-    if any(isinstance(m, float) for m in maps):
-        warnings.warn(
-            "Some classes have no held-out rows; their calibrated probability is set to "
-            "1 / (N + k) (N the held-out weight, k the number of classes).",
-            UserWarning,
-            stacklevel=3,
+    total = merged[0].total_weight
+    pos = np.array([tally.label_weight[1] for tally in merged], dtype=float)
+    fitted = (pos > 0) & (pos < total)
+    maps: list = [None] * k
+    rows = {}
+    for j in np.flatnonzero(fitted):
+        rows[j] = merged[j].to_rows()
+        s, yk, wk = rows[j]
+        maps[j] = clone(template).fit(owner._map_input(template, s), yk, sample_weight=wk)
+    if not fitted.all():
+        # as in memory (CalibrationWrapper._fill_absent_classes): the model's own probability,
+        # a map on the pooled one-vs-rest rows (decision values), or with a single class
+        # present and decision values the smoothed share (N_k + 1) / (N + k), the weights on
+        # the row-count scale (kept when they sum to at least the number of rows, else Kish's
+        # effective size)
+        tally = merged[0]
+        n_eff = total if total >= tally.n_rows else tally.effective_rows
+        if not np.isfinite(n_eff) or n_eff <= 0:
+            n_eff = float(tally.n_rows)
+        pooled = None
+        if fitted.sum() >= 2:
+            parts = [rows[j] for j in np.flatnonzero(fitted)]
+            pooled = tuple(np.concatenate([part[i] for part in parts]) for i in range(3))
+        owner._fill_absent_classes(
+            template, maps, pos * (n_eff / total), n_eff, pooled, stacklevel=5
         )
     owner.tally_ = list(merged)
     return maps
