@@ -79,7 +79,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         candidate whose fit reaches a boundary is not eligible, and with too few rows of a
         class to cross-validate ``"auto"`` warns and uses the most regularised map (Platt
         scaling for binary, temperature scaling for multiclass problems); see
-        ``method_notes_``.
+        ``method_notes_``. A candidate whose fit fails in a fold is left out with a warning,
+        its error in ``method_notes_``; a method the user named (or a map instance) whose fit
+        fails raises a ``ValueError`` naming the method and the reason.
     cv : int, splitter or iterable of (train, test) pairs, default=5
         Folds for cross-fitting (stratified and shuffled when an int). With a frozen estimator
         only ``"auto"`` uses it, to score the candidate maps.
@@ -220,7 +222,17 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         else:
             self.method_ = self.method
             template = CALIBRATION_METHODS[self.method]()
-        self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
+        if self.method == "auto":
+            self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
+        else:
+            # a method the user named that cannot be fitted raises, naming the method
+            try:
+                self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
+            except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
+                raise ValueError(
+                    f"CalibrationWrapper(method={plain(self.method_)!r}): the map could not be "
+                    f"fitted on the {len(ho.y_index)} held-out rows: {exc}"
+                ) from exc
         if self.method == "auto":
             hit = _boundary_of(self.calibrator_)
             if hit is not None and self.method_ in self.method_scores_:

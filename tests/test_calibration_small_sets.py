@@ -223,6 +223,39 @@ def test_failing_candidates_are_reported_and_a_named_failing_method_raises(cance
         CalibrationWrapper(FrozenEstimator(base), method=BinningMap(n_bins=0)).fit(X_cal, y_cal)
 
 
+class _NeedsManyRows(PlattMap):
+    """A map that cannot be fitted on fewer than 100 rows (a test double for a failing fit)."""
+
+    def _fit(self, scores, y, w):
+        if scores.shape[0] < 100:
+            raise np.linalg.LinAlgError(f"only {scores.shape[0]} rows; this map needs 100")
+        super()._fit(scores, y, w)
+
+
+def test_named_method_whose_fit_fails_raises_and_auto_leaves_it_out(cancer_142, monkeypatch):
+    from probwrap._calibration_auto import CALIBRATION_METHODS
+
+    base, X_cal, y_cal, _, _ = cancer_142
+    rows = np.r_[0:90]
+    with pytest.raises(ValueError, match=r"method='_NeedsManyRows'\): the map could not be "
+                       r"fitted on the 90 held-out rows: only 90 rows; this map needs 100"):
+        CalibrationWrapper(FrozenEstimator(base), method=_NeedsManyRows()).fit(
+            X_cal[rows], y_cal[rows]
+        )
+    monkeypatch.setitem(CALIBRATION_METHODS, "beta", _NeedsManyRows)
+    with pytest.raises(ValueError, match=r"method='beta'\): the map could not be fitted"):
+        CalibrationWrapper(FrozenEstimator(base), method="beta").fit(X_cal[rows], y_cal[rows])
+    # auto: the candidate fails in every fold (72 training rows); it is left out with a warning
+    # and its reason, and the other candidates are chosen from as usual
+    with pytest.warns(UserWarning, match=r"'beta' failed in fold 0: only 72 rows"):
+        model = CalibrationWrapper(
+            FrozenEstimator(base), candidates=["platt", "beta", "isotonic"], random_state=0
+        ).fit(X_cal[rows], y_cal[rows])
+    assert "beta" not in model.method_scores_
+    assert model.method_notes_["beta"] == "failed in fold 0: only 72 rows; this map needs 100"
+    assert model.method_ in ("platt", "isotonic")
+
+
 # --------------------------------------------------------------------------- weights
 def test_weight_scale_does_not_change_the_choice(wine_44):
     base, X_cal, y_cal, X_te, _ = wine_44
