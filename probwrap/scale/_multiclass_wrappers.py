@@ -258,12 +258,14 @@ def _cost_block(policy, Xb, yb, wb):
     return np.array([w @ realised, w.sum()])
 
 
-def first_block_row_costs(policy: Any, X: Any, k: int) -> np.ndarray:
+def first_block_row_costs(
+    policy: Any, X: Any, k: int, y: Any = None, sample_weight: Any = None
+) -> np.ndarray:
     """``costs(X)`` of the first Dask block or first Spark rows (validated), to learn the number
-    of actions."""
+    of actions. (``y`` and ``sample_weight`` tell Spark which columns are not features.)"""
     from ._rows import rows_of
 
-    return rows_of(X, None, None, policy.estimator).apply_first(policy._row_costs, k)
+    return rows_of(X, y, sample_weight, policy.estimator).apply_first(policy._row_costs, k)
 
 
 def heldout_cost_dask(policy: Any, X: Any, y: Any, sample_weight: Any) -> float:
