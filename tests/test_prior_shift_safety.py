@@ -604,6 +604,16 @@ def test_estimator_test_is_the_plain_public_score_test():
     assert res.shift_statistic == pytest.approx(plain.statistic, rel=1e-10)
     assert res.shift_pvalue == pytest.approx(plain.pvalue, rel=1e-10)
     assert strat.statistic > plain.statistic
+    # the harm scale behind the evidence cutoff reads the same variance: both samples' mean
+    # scores, the labelled one unstratified
+    from probwrap.shift._shift_tests import _mean_cov, _score_rows, null_harm_scale
+
+    src = est.source_prior_
+    _, c_t, n_t = _mean_cov(_score_rows(cal_t, src), np.ones(700))
+    _, c_s, n_s = _mean_cov(_score_rows(cal_s, src), np.ones(900))
+    both = c_t / (n_t - 1) + c_s / (n_s - 1)
+    assert res.null_harm_scale == pytest.approx(
+        null_harm_scale(cal_t, np.ones(700), src, both), rel=1e-10)
 
 
 def test_few_labelled_rows_raise_no_false_alarm_on_bundled_digits():
