@@ -27,6 +27,7 @@ from .decision import (
     guaranteed_cutoff,
     plugin_cutoff,
     search_cutoff,
+    settle_cutoff,
     tune_class_offsets,
 )
 from .decision._cutoff import _thin_cost_curve
@@ -129,7 +130,7 @@ class _RuleFitting:
                 p, ho.y_index, matrix, sample_weight=ho.sample_weight, capacity=share,
                 score_bounds=(0.0, 1.0),
             )
-            self.cutoff_ = res.cutoff
+            self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res, sample_weight=ho.sample_weight).cutoff
             if self.keep_heldout or np.count_nonzero(ho.sample_weight) <= SMALL_HELDOUT_ROWS:
                 self.cost_curve_ = res
                 self._interval_inputs = (p, ho.y_index, matrix, ho.sample_weight, ho.fold, share)
