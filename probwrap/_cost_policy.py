@@ -358,7 +358,14 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
                     "capacity limit would change the certified rules)."
                 )
         if self._cutoff_mode:
-            self._fit_cutoff(ho, proba, matrix, budget_share)
+            # only the second class's probabilities are read: kept as one contiguous column,
+            # and the labels as one-byte codes, for the memory of large held-out sets
+            if ho is not None:
+                ho.y_index = ho.y_index.astype(np.int8)
+            p = None if proba is None else np.ascontiguousarray(proba[:, 1])
+            if ho is not None:
+                ho.values = proba = None
+            self._fit_cutoff(ho, p, matrix, budget_share)
         else:
             self._fit_offsets(ho, proba, matrix, row_costs, k, budget_index, budget_share)
         if ho is not None and ho.from_tally and self._interval_inputs is not None:
@@ -373,7 +380,10 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
                 summary = {"weighted": tally, "rows": tally.counts, "folds": np.empty(0)}
                 self._interval_inputs = ("summary", summary, matrix, budget_share)
         if ho is not None:
-            chosen = self._decide(proba, matrix if row_costs is None else row_costs)
+            if self._cutoff_mode:
+                chosen = (p > self.cutoff_).astype(np.intp)  # (the rule of _decide)
+            else:
+                chosen = self._decide(proba, matrix if row_costs is None else row_costs)
             realised = (
                 matrix[ho.y_index, chosen]
                 if row_costs is None

@@ -26,11 +26,10 @@ from .decision import (
     guaranteed_class_offsets,
     guaranteed_cutoff,
     plugin_cutoff,
-    search_cutoff,
     settle_cutoff,
     tune_class_offsets,
 )
-from .decision._cutoff import _thin_cost_curve
+from .decision._cutoff import _search_cutoff
 
 __all__: list[str] = []
 
@@ -111,11 +110,11 @@ class _RuleFitting:
             )
         return 1, check_capacity(self.capacity)
 
-    def _fit_cutoff(self, ho, proba, matrix, share) -> None:
+    def _fit_cutoff(self, ho, p, matrix, share) -> None:
+        # p: the held-out probabilities of the second class (None without held-out rows)
         if self.strategy == "fixed":
             cutoff = _check_cutoff(self.cutoff)
         elif self.guarantee is not None:
-            p = proba[:, 1]
             g = guaranteed_cutoff(
                 p, ho.y_index, matrix, sample_weight=ho.sample_weight, capacity=share,
                 score_bounds=(0.0, 1.0), **self._guarantee_args(),
@@ -125,18 +124,20 @@ class _RuleFitting:
             self.cutoff_ = g.cutoff
             return
         elif self.strategy == "tuned" and self.costs is not None:
-            p = proba[:, 1]
-            res = search_cutoff(
-                p, ho.y_index, matrix, sample_weight=ho.sample_weight, capacity=share,
-                score_bounds=(0.0, 1.0),
+            keep = self.keep_heldout or np.count_nonzero(ho.sample_weight) <= SMALL_HELDOUT_ROWS
+            # beyond SMALL_HELDOUT_ROWS the curve is kept thinned, and the search builds only
+            # the kept points (the full curve would be three arrays as long as the rows)
+            res = _search_cutoff(
+                p, ho.y_index, matrix, ho.sample_weight, share, (0.0, 1.0),
+                max_points=None if keep else CURVE_POINTS,
             )
-            self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res, sample_weight=ho.sample_weight).cutoff
-            if self.keep_heldout or np.count_nonzero(ho.sample_weight) <= SMALL_HELDOUT_ROWS:
-                self.cost_curve_ = res
+            self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res,
+                                         sample_weight=ho.sample_weight).cutoff
+            self.cost_curve_ = res
+            del res
+            if keep:
                 self._interval_inputs = (p, ho.y_index, matrix, ho.sample_weight, ho.fold, share)
             else:
-                self.cost_curve_ = _thin_cost_curve(res, CURVE_POINTS)
-                del res  # the full curve (three arrays as long as the rows) goes before the tally
                 self._interval_inputs = (
                     "summary", _heldout_summary(self, p, ho, matrix, share), matrix, share
                 )
@@ -145,7 +146,7 @@ class _RuleFitting:
             cutoff = plugin_cutoff(matrix)
         if share is not None:
             cap_cut = capacity_cutoff(
-                proba[:, 1], share, sample_weight=ho.sample_weight, score_bounds=(0.0, 1.0)
+                p, share, sample_weight=ho.sample_weight, score_bounds=(0.0, 1.0)
             )
             cutoff = max(cutoff, cap_cut)
         self.cutoff_ = float(cutoff)

@@ -179,6 +179,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     "`y` contains only 1 class; the held-out rows must contain at least two "
                     "classes."
                 )
+            # the labels wait as one-byte (or two-byte) codes while the model predicts
+            y_index = y_index.astype(np.min_scalar_type(est_classes.shape[0] - 1))
             values = np.asarray(getattr(estimator, response)(X), dtype=float)
             # every row is in no fold: a read-only view of one value, not n of them
             fold = np.broadcast_to(np.array(-1, dtype=int), (n,))

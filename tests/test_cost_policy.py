@@ -294,3 +294,24 @@ def test_string_labels_dataframe_and_pickle():
     again = pickle.loads(pickle.dumps(policy))
     np.testing.assert_array_equal(again.predict(df), policy.predict(df))
     assert set(np.unique(policy.predict(df))) <= {"inspect", "ship"}
+
+
+def test_tuned_fit_on_many_rows_keeps_the_thinned_curve_and_direct_heldout_cost():
+    # Consistency: beyond 20,000 held-out rows the fit searches with the curve built only at
+    # the kept points and reads only the positive-class column; the cutoff, the kept curve and
+    # heldout_cost_ equal the full search thinned afterwards and the cost counted row by row.
+    from probwrap._cost_policy_summary import CURVE_POINTS
+    from probwrap.decision._cutoff import _thin_cost_curve
+
+    X, y = make_classification(n_samples=30_000, n_features=5, random_state=0)
+    model = FrozenEstimator(LogisticRegression().fit(X[:2000], y[:2000]))
+    C = np.array([[0.0, 1.0], [5.0, 0.25]])
+    pol = CostPolicyWrapper(model, costs=C, strategy="tuned").fit(X, y)
+    p = model.predict_proba(X)[:, 1]
+    want = _thin_cost_curve(search_cutoff(p, y, C, score_bounds=(0.0, 1.0)), CURVE_POINTS)
+    assert pol.cutoff_ == want.cutoff
+    np.testing.assert_array_equal(pol.cost_curve_.cutoffs, want.cutoffs)
+    np.testing.assert_array_equal(pol.cost_curve_.costs, want.costs)
+    np.testing.assert_array_equal(pol.cost_curve_.flagged_share, want.flagged_share)
+    # (dyadic costs: every sum is exact, so equality is exact)
+    assert pol.heldout_cost_ == float(np.mean(C[y, (p > pol.cutoff_).astype(int)]))

@@ -104,50 +104,160 @@ def _check_bounds(score_bounds: Any) -> tuple[float, float] | None:
     return lo, hi
 
 
-def _binary_targets(y: Any, n: int) -> np.ndarray:
+def _binary_targets(y: Any, n: int, *, small: bool = False) -> np.ndarray:
+    """``y`` as 0/1 codes: intp, or (``small=True``) one-byte codes kept as they are."""
     arr = np.asarray(y)
     if arr.ndim != 1:
         raise ValueError(f"`y` must be 1-d of shape (n,); got shape {arr.shape}.")
     if arr.dtype.kind == "b":
         arr = arr.astype(np.int8)
-    if arr.dtype.kind not in "iuf" or not np.all((arr == 0) | (arr == 1)):
+    if arr.dtype.kind in "iu":  # (two reductions, no temporaries)
+        binary = arr.size == 0 or (int(arr.min()) >= 0 and int(arr.max()) <= 1)
+    else:
+        binary = arr.dtype.kind == "f" and bool(np.all((arr == 0) | (arr == 1)))
+    if not binary:
         # (a set, not np.unique: labels of mixed types cannot be sorted)
         seen = sorted({repr(plain(v)) for v in arr.tolist()})[:5]
         raise ValueError(
             "`y` must hold binary targets coded 0 (negative) and 1 (positive); got values "
             f"{', '.join(seen)}."
         )
+    if small and arr.dtype.itemsize == 1 and arr.dtype.kind in "iu":
+        return arr
     return arr.astype(np.intp, copy=False)
 
 
+_MAGNITUDE = np.int64(0x7FFF_FFFF_FFFF_FFFF)
+_HALF_RANGE = np.int64(511 << 52)  # bit pattern of 2.0**-512: scaled scores stay below it
+
+
+def _subnormals_compare() -> bool:
+    """Whether the CPU compares subnormal doubles as themselves (no denormals-are-zero mode)."""
+    return bool(np.array(5e-324) > np.array(0.0))
+
+
+def _packed_order(
+    s: np.ndarray, y: np.ndarray, label_out: np.ndarray | None = None
+) -> tuple[np.ndarray, np.ndarray] | None:
+    """The scores in ascending order and their classes (0/1, intp), from ONE plain sort.
+
+    Each row becomes one 64-bit key, order-preserving in the score, that carries the class in
+    its lowest bit, so one ``np.sort`` of the keys (the fast sort: no index) orders the rows by
+    score, with the negatives before the positives among tied scores (the order of the two-run
+    merge, so the cumulative sums are the same). The keys are exact:
+
+    * scores in [0, 1.5) (probabilities): the IEEE bit pattern of a non-negative double is
+      order-preserving as an integer and below ``2**62``, so ``(bits << 1) | class`` fits 63 bits
+      (the shift drops the sign bit of -0.0: it keys as 0.0, the score it equals);
+    * any other scores are first scaled by a power of two into ``(-2**-512, 2**-512)`` (exact
+      unless a nonzero score would fall below the smallest normal double, which happens only
+      when the scores span more than about 510 binary orders of magnitude: then None is
+      returned and the caller merges per class), -0.0 is made 0.0, the bit pattern is mapped to
+      an order-preserving signed integer (magnitude bits flipped for negatives) and shifted to
+      be non-negative; twice that plus the class is again below ``0x7FF0 << 48``.
+
+    The classes ``y`` are intp or one-byte 0/1 codes; they are returned as int64 0/1, written
+    into ``label_out`` (int64, shape (n,)) when it is given. Either way the keys, read as doubles, are finite and non-negative, whose order as doubles
+    is their order as integers; NumPy sorts doubles faster than integers, so they are sorted as
+    doubles (as integers if the CPU flushes subnormals to zero in comparisons). Returns None
+    when the scores cannot be keyed exactly or the platform is not 64-bit IEEE.
+    """
+    small = y.dtype.itemsize == 1 and y.dtype.kind in "iu"
+    if s.dtype != np.float64 or not (small or y.dtype == np.intp) or np.dtype(np.intp).itemsize != 8:
+        return None
+    lo, hi = float(s.min()), float(s.max())
+    as_doubles = _subnormals_compare()
+    if lo >= 0.0 and hi < 1.5:
+        key = (s.view(np.uint64) << np.uint64(1)).view(np.int64)
+        key |= y
+        key.view(np.float64).sort() if as_doubles else key.sort()
+        label = np.bitwise_and(key, np.int64(1), out=label_out)
+        key >>= np.int64(1)
+        return key.view(np.float64), label
+    # big * 2**k < 2**-512; k in [-1536, 561], applied as two representable powers of two
+    k = -512 - int(np.frexp(max(-lo, hi))[1])
+    steps = [float(np.ldexp(1.0, p)) for p in (max(k, -1000), k - max(k, -1000))]
+    v = s * steps[0]
+    if steps[1] != 1.0:
+        v *= steps[1]
+    v += 0.0  # -0.0 + 0.0 is 0.0; every other value is unchanged
+    key = v.view(np.int64)
+    del v
+    flip = key >> np.int64(63)  # -1 for negative scores, 0 otherwise
+    flip &= _MAGNITUDE
+    key ^= flip  # order-preserving: negatives become -(magnitude) - 1
+    del flip
+    key += _HALF_RANGE  # now in [0, 2**62 - 2**53)
+    key <<= np.int64(1)
+    key |= y
+    key.view(np.float64).sort() if as_doubles else key.sort()
+    # a scaled score below the smallest normal double may have been rounded: any key of a
+    # nonzero subnormal, or more zeros after scaling than before, leaves the order unproven,
+    # and such scores are left to the exact merge
+    zero = 2 * int(_HALF_RANGE)
+    first, zeros, past_zeros, past = np.searchsorted(
+        key, [zero - 2**53, zero, zero + 2, zero + 2**53 + 2], side="left"
+    )
+    n_zero = int(past_zeros - zeros)
+    if int(past - first) > n_zero or (n_zero and n_zero != int(np.count_nonzero(s == 0.0))):
+        return None
+    label = np.bitwise_and(key, np.int64(1), out=label_out)
+    key >>= np.int64(1)
+    key -= _HALF_RANGE
+    flip = key >> np.int64(63)
+    flip &= _MAGNITUDE
+    key ^= flip
+    del flip
+    ss = key.view(np.float64)
+    for step in reversed(steps):  # exact powers of two, back to the original finite values
+        if step != 1.0:
+            ss *= 1.0 / step
+    return ss, label
+
+
 def _search_plain_rows(
-    s: np.ndarray, y: np.ndarray, matrix: np.ndarray, cap: float | None, bounds
+    s: np.ndarray, y: np.ndarray, matrix: np.ndarray, cap: float | None, bounds,
+    max_points: int | None = None,
 ) -> CutoffSearchResult:
     """:func:`_search_rows` for unweighted rows and one cost matrix, near the cost of one sort.
 
-    The scores of each class are sorted separately with plain sorts (no index), then the two
-    sorted runs are merged: a stable ``argsort`` of the two runs (one linear merge) tells which
-    merged entries are positives and, gathered through, gives the merged scores. No per-row
-    index into the original rows is needed. The flagged shares are built only once the sorted
-    scores are freed (the capacity check reads the few shares it needs), so that the peak
-    memory stays near the three arrays of the returned curve.
+    The rows are put in score order with their classes by one plain sort of packed keys
+    (:func:`_packed_order`). Where the scores cannot be packed exactly, the scores of each
+    class are sorted separately with plain sorts (no index), then the two sorted runs are
+    merged: a stable ``argsort`` of the two runs (one linear merge) tells which merged entries
+    are positives and, gathered through, gives the merged scores. Either way the tied rows come
+    negatives first, so the cumulative sums are the same. No per-row index into the original
+    rows is needed. The classes, then each row's step of the cost, then their cumulative sum
+    are written into the buffer that becomes the cost curve; the flagged shares are built only
+    once the sorted scores are freed (the capacity check reads the few shares it needs).
+
+    With ``max_points``, the curve is returned as :func:`_thin_cost_curve` would thin it, but
+    the representative cutoffs and shares are computed at the kept decisions only (the full
+    curve is never built: the memory stays at the sorted scores and the costs).
     """
     n = s.shape[0]
-    positive = y == 1
-    n_pos = int(np.count_nonzero(positive))
+    n_pos = int(np.count_nonzero(y))
     n_neg = n - n_pos
-    runs = np.empty(n)
-    part = s[np.flatnonzero(~positive)]
-    part.sort()
-    runs[:n_neg] = part
-    part = s[np.flatnonzero(positive)]
-    part.sort()
-    runs[n_neg:] = part
-    del positive, part
-    order = np.argsort(runs, kind="stable")  # two sorted runs: one linear merge
-    ss = runs[order]  # the merged scores (a gather along two monotone runs)
-    is_pos = order >= n_neg
-    del order, runs
+    buf = np.empty(n + 1)  # the classes, the steps, then the cumulative sums, in score order
+    label = buf[1:].view(np.int64)
+    packed = _packed_order(s, y, label)
+    if packed is not None:
+        ss = packed[0]
+        del packed
+    else:
+        positive = y == 1
+        runs = np.empty(n)
+        part = s[np.flatnonzero(~positive)]
+        part.sort()
+        runs[:n_neg] = part
+        part = s[np.flatnonzero(positive)]
+        part.sort()
+        runs[n_neg:] = part
+        del positive, part
+        order = np.argsort(runs, kind="stable")  # two sorted runs: one linear merge
+        ss = runs[order]  # the merged scores (a gather along two monotone runs)
+        np.greater_equal(order, n_neg, out=label)
+        del order, runs
     last = np.empty(n, dtype=bool)
     np.not_equal(ss[1:], ss[:-1], out=last[:-1])
     last[-1] = True
@@ -156,12 +266,20 @@ def _search_plain_rows(
     d_neg = float(matrix[0, 0] - matrix[0, 1])
     d_pos = float(matrix[1, 0] - matrix[1, 1])
     total_flag_all = float(np.dot(np.array([n_neg, n_pos], dtype=float), matrix[:, 1]))
+    # each row's step, d_neg or d_pos, written over its class in place: the bit pattern of
+    # d_neg, with the bits in which d_pos differs flipped where the class is 1
+    neg_bits, pos_bits = (int(b) for b in np.array([d_neg, d_pos]).view(np.int64))
+    np.negative(label, out=label)  # 0, or -1 (every bit set)
+    label &= np.int64(neg_bits ^ pos_bits)
+    label ^= np.int64(neg_bits)
+    del label
+    step = buf[1:]
+    np.cumsum(step, out=step)
     if last.all():
         del last
         u, m, ends = ss, n, None
         del ss
-        cost = np.empty(n + 1)
-        step = cost[1:]  # filled and summed in place
+        cost = buf
     else:
         ends = np.flatnonzero(last)
         del last
@@ -169,15 +287,8 @@ def _search_plain_rows(
         u = ss[ends]
         del ss
         cost = np.empty(m + 1)
-        step = np.empty(n)
-    # (filled by mask in place: a look-up table indexed by the flags would make an index array)
-    step.fill(d_neg)
-    np.copyto(step, d_pos, where=is_pos)
-    del is_pos
-    np.cumsum(step, out=step)
-    if ends is not None:
         np.take(step, ends, out=cost[1:])
-    del step
+    del step, buf
     cost[0] = 0.0
     cost += total_flag_all
     cost /= float(n)
@@ -191,21 +302,23 @@ def _search_plain_rows(
         if bounds[1] > u[-1]:
             hi_ext = bounds[1]
 
-    def share_at(j: int) -> float:
-        # flagged share of decision j (the rows above the j-th distinct score), by the same
+    def shares_at(j: Any) -> np.ndarray:
+        # flagged shares of decisions j (the rows above the j-th distinct score), by the same
         # operations as the array built below
-        if j == m:
-            return 0.0
-        rows_at_or_below = 0 if j == 0 else (j if ends is None else int(ends[j - 1]) + 1)
-        return (float(n) - float(rows_at_or_below)) / float(n)
+        j = np.asarray(j)
+        k = np.clip(j - 1, 0, max(m - 1, 0))
+        below = np.where(j == 0, 0.0, (j if ends is None else ends[k] + 1.0))
+        out = np.subtract(float(n), np.asarray(below, dtype=float))
+        out /= float(n)
+        return np.where(j == m, 0.0, out)
 
     admissible = np.ones(m + 1, dtype=bool)
     if cap is not None:
         # the share falls with j, so the admissible decisions are all those from the first one
-        first, past = 0, m  # share_at(m) = 0 is always admissible
+        first, past = 0, m  # share m is 0: always admissible
         while first < past:
             j = (first + past) // 2
-            if share_at(j) <= cap * (1 + 1e-12):
+            if float(shares_at(j)) <= cap * (1 + 1e-12):
                 past = j
             else:
                 first = j + 1
@@ -213,6 +326,24 @@ def _search_plain_rows(
     lower = _DecisionEnds(u, lo_ext, hi_ext, upper=False)
     upper = _DecisionEnds(u, lo_ext, hi_ext, upper=True)
     index, value, lo, hi, flat = _pick_optimum(cost, lower, upper, admissible)
+    if max_points is not None and m + 1 > max_points:
+        # the thinned curve directly: the holder of the cutoff is the first decision whose
+        # middle is not below it (the middles ascend; `value` lies in decision `index`)
+        around = np.clip(np.arange(index - 1, index + 3), 0, m)
+        holder = int(around[np.searchsorted(_middle(lower[around], upper[around]), value)])
+        keep = _thin_indices(cost, admissible, holder, max_points)
+        result = CutoffSearchResult(
+            cutoff=value,
+            cost=float(cost[index]),
+            interval=(lo, hi),
+            flat=flat,
+            cutoffs=_middle(lower[keep], upper[keep]),
+            costs=cost[keep],
+            flagged_share=shares_at(keep),
+            admissible=admissible[keep],
+            capacity=cap,
+        )
+        return result
     del lower, upper
     mid = _neighbour_middles(u, lo_ext, hi_ext)
     del u
@@ -275,7 +406,7 @@ def _pick_optimum(
 def _prepare(scores, y, costs, sample_weight):
     s = check_scores(scores, name="scores", ndim=1)
     n = check_same_length(("scores", s), ("y", np.asarray(y)))
-    yi = _binary_targets(y, n)
+    yi = _binary_targets(y, n, small=True)  # (one-byte 0/1 codes are not widened)
     matrix = _resolve_costs(costs, n, 2)
     if matrix.shape[-1] != 2:
         raise ValueError(
@@ -332,7 +463,9 @@ def search_cutoff(
 
     Notes
     -----
-    Cost is O(n log n): one ``argsort`` and a few cumulative sums. Where several neighbouring
+    Cost is O(n log n): for unweighted rows with one cost matrix, one plain sort of 64-bit keys
+    that carry each row's class in the lowest bit; with ``sample_weight`` or per-row costs, one
+    ``argsort``; then a few cumulative sums. Where several neighbouring
     decisions share the minimal cost the optimum is a flat interval; ``flat`` is set and the
     middle of the widest such interval is returned. Means are per unit of weight.
 
@@ -344,15 +477,26 @@ def search_cutoff(
     >>> res.cutoff, res.cost, res.interval
     (0.25, 0.25, (0.1, 0.4))
     """
+    return _search_cutoff(scores, y, costs, sample_weight, capacity, score_bounds)
+
+
+def _search_cutoff(
+    scores, y, costs, sample_weight, capacity, score_bounds, max_points: int | None = None
+) -> CutoffSearchResult:
+    """:func:`search_cutoff`; with ``max_points``, the curve thinned as by
+    :func:`_thin_cost_curve` (for unweighted rows and one cost matrix without ever building
+    the full curve's cutoffs and shares)."""
     s, yi, w, matrix, unit = _prepare(scores, y, costs, sample_weight)
     if w is None and matrix.ndim == 2:
         res = _search_plain_rows(
-            s, yi, matrix, check_capacity(capacity), _check_bounds(score_bounds)
+            s, yi, matrix, check_capacity(capacity), _check_bounds(score_bounds), max_points
         )
     else:
         res = _search_rows(
             s, _RowCosts(matrix, yi, w), check_capacity(capacity), _check_bounds(score_bounds)
         )
+        if max_points is not None:
+            res = _thin_cost_curve(res, max_points)
     # mean costs never exceed the largest cost entry; scaling back can pass the largest double
     # only by rounding (a mean of costs at the top of the range)
     if unit == 1.0:
@@ -385,6 +529,28 @@ def _search_rows(s, row_costs: _RowCosts, cap, bounds) -> CutoffSearchResult:
     )
 
 
+def _thin_indices(costs: np.ndarray, admissible: np.ndarray, holder: int, max_points: int):
+    """Decisions :func:`_thin_cost_curve` keeps: evenly spaced ones, both ends of the runs of
+    minimal cost (the first and last 64) and the two around ``holder``."""
+    m1 = costs.shape[0]
+    # (no temporaries as long as the curve when every decision is admissible)
+    if admissible.all():
+        c = costs
+        scale = max(abs(float(c.max())), abs(float(c.min())))
+    else:
+        c = np.where(admissible, costs, np.inf)
+        scale = (float(np.max(np.abs(costs[admissible]))) if admissible.any() else 0.0)
+    best = float(c.min())
+    opt = np.flatnonzero(c <= best + 1e-9 * scale)
+    breaks = np.flatnonzero(np.diff(opt) > 1)
+    run_ends = np.concatenate([opt[np.concatenate([[0], breaks + 1])],
+                               opt[np.concatenate([breaks, [opt.shape[0] - 1]])]])
+    return np.unique(np.concatenate([
+        np.linspace(0, m1 - 1, max_points).round().astype(np.intp),
+        run_ends[:64], run_ends[-64:], np.clip([holder - 1, holder], 0, m1 - 1),
+    ]))
+
+
 def _thin_cost_curve(result: CutoffSearchResult, max_points: int) -> CutoffSearchResult:
     """The same search result with the curve kept at no more than about ``max_points`` decisions.
 
@@ -393,27 +559,10 @@ def _thin_cost_curve(result: CutoffSearchResult, max_points: int) -> CutoffSearc
     both ends of every run of minimal cost and the decision holding ``cutoff``, so the minimum
     still shows on a plot. Curves that are already short are returned as they are.
     """
-    m1 = result.costs.shape[0]
-    if m1 <= max_points:
+    if result.costs.shape[0] <= max_points:
         return result
-    # (no temporaries as long as the curve when every decision is admissible)
-    if result.admissible.all():
-        c = result.costs
-        scale = max(abs(float(c.max())), abs(float(c.min())))
-    else:
-        c = np.where(result.admissible, result.costs, np.inf)
-        scale = (float(np.max(np.abs(result.costs[result.admissible])))
-                 if result.admissible.any() else 0.0)
-    best = float(c.min())
-    opt = np.flatnonzero(c <= best + 1e-9 * scale)
-    breaks = np.flatnonzero(np.diff(opt) > 1)
-    run_ends = np.concatenate([opt[np.concatenate([[0], breaks + 1])],
-                               opt[np.concatenate([breaks, [opt.shape[0] - 1]])]])
-    holder = np.searchsorted(result.cutoffs, result.cutoff)
-    keep = np.unique(np.concatenate([
-        np.linspace(0, m1 - 1, max_points).round().astype(np.intp),
-        run_ends[:64], run_ends[-64:], np.clip([holder - 1, holder], 0, m1 - 1),
-    ]))
+    holder = int(np.searchsorted(result.cutoffs, result.cutoff))
+    keep = _thin_indices(result.costs, result.admissible, holder, max_points)
     return replace(
         result,
         cutoffs=result.cutoffs[keep],

@@ -16,11 +16,11 @@ from ._tally import (
     DEFAULT_RESOLUTION,
     ScoreTally,
     _check_resolution,
+    _combine,
     _tally_block,
-    replicate_seed,
 )
 
-__all__ = ["is_dask_collection", "tally_dask_scores", "heldout_from_dask", "dask_predict"]
+__all__ = ["DaskRows", "is_dask_collection", "tally_dask_scores", "dask_predict"]
 
 
 def is_dask_collection(obj: Any) -> bool:
@@ -111,7 +111,7 @@ def _frozen_multiclass(owner: Any, y: Any) -> tuple[Any, np.ndarray]:
     estimator = owner.estimator
     if not isinstance(estimator, FrozenEstimator):
         raise ValueError(
-            "Dask input needs an already fitted estimator wrapped in "
+            "Dask or Spark input needs an already fitted estimator wrapped in "
             "sklearn.frozen.FrozenEstimator; got " + type(estimator).__name__ + "."
         )
     if y is None:
@@ -119,8 +119,62 @@ def _frozen_multiclass(owner: Any, y: Any) -> tuple[Any, np.ndarray]:
     return estimator, np.asarray(estimator.classes_)
 
 
+class DaskBlocks:
+    """Per-block values persisted on the workers (see :meth:`DaskRows.persist`)."""
+
+    def __init__(self, dask: Any, parts: list) -> None:
+        self._dask = dask
+        self._parts = parts
+
+    def reduce(self, fn: Any, *args: Any) -> Any:
+        """Sum over the blocks of ``fn(block, *args)``, added on the client in block order."""
+        return _reduce(self._dask, fn, self._parts, *args)
+
+    def release(self) -> None:
+        """Let the workers drop the persisted blocks."""
+        self._parts.clear()
+
+
+class DaskRows:
+    """Rows of a Dask collection with their (optional) labels and weights, block by block.
+
+    The interface the driver-side fits use for Dask and Spark alike (the Spark twin is
+    :class:`probwrap.scale._spark.SparkRows`): ``map_reduce(fn, *args)`` sums
+    ``fn(*args, Xb, yb, wb)`` over the blocks (``fn(*args, Xb, wb)`` for unlabelled rows);
+    ``persist(make, *args)`` keeps ``make(*args, Xb, yb, wb)`` of every block where the block
+    lives, for repeated reductions; ``apply_first(fn, *args)`` is ``fn(Xb, *args)`` of the first
+    block. ``estimator`` is accepted for symmetry with Spark, where it names the feature columns.
+    """
+
+    engine = "Dask"
+
+    def __init__(self, X: Any, y: Any, sample_weight: Any, estimator: Any = None) -> None:
+        self._dask, _ = _import_dask()
+        blocks, lengths = _row_blocks(X)
+        self._blocks = blocks
+        ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
+        if y is None:
+            self._pieces = [(b, wb) for b, wb in zip(blocks, ws, strict=True)]
+        else:
+            ys = _aligned_blocks(y, "y", X, blocks, lengths)
+            self._pieces = [t for t in zip(blocks, ys, ws, strict=True)]
+
+    def map_reduce(self, fn: Any, *args: Any) -> Any:
+        call = self._dask.delayed(fn, pure=True)
+        parts = [call(*args, *piece) for piece in self._pieces]
+        return _tree_merge(self._dask, parts).compute()
+
+    def persist(self, make: Any, *args: Any) -> DaskBlocks:
+        call = self._dask.delayed(make, pure=True)
+        return DaskBlocks(self._dask, _persist(self._dask, [call(*args, *p) for p in self._pieces]))
+
+    def apply_first(self, fn: Any, *args: Any) -> Any:
+        return self._dask.delayed(fn, pure=True)(self._blocks[0], *args).compute()
+
+
 def _tree_merge(dask: Any, parts: list) -> Any:
-    merge = dask.delayed(lambda a, b: a.merge(b), pure=True)
+    """Tree of pairwise merges (tallies) or sums (see ``_combine``) of delayed block results."""
+    merge = dask.delayed(_combine, pure=True)
     while len(parts) > 1:
         parts = [
             merge(parts[i], parts[i + 1]) if i + 1 < len(parts) else parts[i]
@@ -139,7 +193,7 @@ def _reduce(dask: Any, fn, parts: list, *args) -> Any:
     results = dask.compute(*[call(part, *args) for part in parts])
     out = results[0]
     for r in results[1:]:
-        out = tuple(a + b for a, b in zip(out, r, strict=True)) if isinstance(out, tuple) else out + r
+        out = _combine(out, r)
     return out
 
 
@@ -253,42 +307,6 @@ def owner_resolution(owner: Any) -> float:
         ) from None
 
 
-def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: str):
-    """Held-out predictions of a frozen binary estimator on Dask rows, as tally rows.
-
-    The returned :class:`~probwrap._predictions.HeldOutPredictions` has one row per (bin, class)
-    of the tally, weighted by the tallied weight; ``from_tally`` is set.
-    """
-    from sklearn.frozen import FrozenEstimator
-
-    estimator = owner.estimator
-    if not isinstance(estimator, FrozenEstimator):
-        raise ValueError(
-            "Dask input needs an already fitted estimator wrapped in "
-            "sklearn.frozen.FrozenEstimator: the wrappers do not fit models on Dask data, they "
-            f"only tally a frozen model's predictions; got {type(estimator).__name__}."
-        )
-    if y is None:
-        raise ValueError(f"{type(owner).__name__} requires y to be passed, but the target y is None.")
-    classes = np.asarray(estimator.classes_)
-    if classes.shape[0] != 2:
-        raise ValueError(
-            f"Dask input is supported for binary classifiers; the frozen estimator has "
-            f"{classes.shape[0]} classes. Tally each class's one-vs-rest scores with "
-            "probwrap.scale.tally_scores instead."
-        )
-    # Wrappers that report bootstrap intervals ask for Poisson replicates (``_dask_replicates``),
-    # drawn per block from a generator seeded by their random_state and the block index.
-    n_rep = int(owner._dask_replicates()) if hasattr(owner, "_dask_replicates") else 0
-    seed = replicate_seed(getattr(owner, "random_state", None)) if n_rep else 0
-    resolution = owner_resolution(owner)
-    tally = dask_tally_of_model(
-        estimator, response, X, y, sample_weight, resolution=resolution, n_replicates=n_rep,
-        seed=seed, stream=0,
-    )
-    return heldout_rows_from_tally(owner, estimator, tally, response)
-
-
 def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, response: str):
     """The held-out predictions of a frozen binary estimator whose rows were tallied (Dask or
     Spark): one row per (bin, class) of the tally; sets the owner's fitted attributes."""
@@ -325,37 +343,6 @@ def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, respo
         estimator=estimator,
         from_tally=True,
     )
-
-
-def unlabelled_proba_from_dask(
-    estimator: Any,
-    X: Any,
-    sample_weight: Any = None,
-    *,
-    n_replicates: int = 0,
-    random_state: Any = None,
-    resolution: float = DEFAULT_RESOLUTION,
-):
-    """Binary posteriors of unlabelled Dask rows as tally rows: ``(proba (m, 2), weights, tally)``.
-
-    Replicates (if any) use stream 1 of the seed, so they are independent of the labelled
-    tally's (stream 0) for the same ``random_state``.
-    """
-    classes = np.asarray(estimator.classes_)
-    if classes.shape[0] != 2:
-        raise ValueError(
-            f"Dask input is supported for binary classifiers; the estimator has "
-            f"{classes.shape[0]} classes."
-        )
-    seed = replicate_seed(random_state) if n_replicates else 0
-    tally = dask_tally_of_model(
-        estimator, "predict_proba", X, None, sample_weight, resolution=resolution,
-        n_replicates=n_replicates, seed=seed, stream=1,
-    )
-    if tally.total_weight <= 0:
-        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
-    proba, w = tally.to_scores(proba=True)
-    return proba, w, tally
 
 
 def _expit(x: np.ndarray) -> np.ndarray:

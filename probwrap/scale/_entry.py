@@ -6,15 +6,16 @@ but never a wrapper, so the two layers never import each other (checked by
 ``tests/test_import_layers.py``). Dask itself is imported only when Dask input is given.
 
 The wrappers treat a Spark DataFrame like a Dask collection (``_heldout._is_dask`` recognises
-both); the entries below send Spark DataFrames to :mod:`probwrap.scale._spark`, which computes
-the same tallies partition by partition, or refuse them where only Dask has a path.
+both). The fits below are written once over :mod:`probwrap.scale._rows`, which hands them Dask
+blocks or Spark partitions alike; only monitoring (Dask blocks against a Spark batch column) and
+prediction (Dask arrays against ``add_predictions``) differ by engine.
 """
 
 from __future__ import annotations
 
 from typing import Any
 
-from . import _dask, _multiclass, _multiclass_wrappers
+from . import _dask, _multiclass, _multiclass_wrappers, _rows
 from ._bootstrap import tally_cutoff_interval, tally_prior_interval
 from ._build import tally_scores
 from ._dask import owner_resolution
@@ -46,28 +47,14 @@ def _spark(obj: Any) -> bool:
     return is_spark_frame(obj)
 
 
-def _refuse(what: str) -> None:
-    from ._spark import refuse_spark
-
-    refuse_spark(what)
-
-
 def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: str):
     """Held-out tally rows of a frozen binary model on Dask or Spark rows."""
-    if _spark(X):
-        from ._spark import heldout_from_spark
-
-        return heldout_from_spark(owner, X, y, sample_weight, response)
-    return _dask.heldout_from_dask(owner, X, y, sample_weight, response)
+    return _rows.heldout_from_rows(owner, X, y, sample_weight, response)
 
 
 def unlabelled_proba_from_dask(estimator: Any, X: Any, sample_weight: Any = None, **kwargs):
     """Posteriors of unlabelled Dask or Spark rows as tally rows."""
-    if _spark(X):
-        from ._spark import unlabelled_proba_from_spark
-
-        return unlabelled_proba_from_spark(estimator, X, sample_weight, **kwargs)
-    return _dask.unlabelled_proba_from_dask(estimator, X, sample_weight, **kwargs)
+    return _rows.unlabelled_proba_from_rows(estimator, X, sample_weight, **kwargs)
 
 
 def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weight: Any):
@@ -91,30 +78,20 @@ def dask_predict(method: Any, X: Any, n_columns: Any, dtype: Any = float):
 
 
 def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
-    if _spark(X):
-        _refuse("A multiclass frozen model")
     return _multiclass.fit_multiclass_source(owner, X, y, sample_weight)
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None):
-    if _spark(X):
-        _refuse("A multiclass frozen model")
     return _multiclass.estimate_multiclass_target(est, estimator, X, sample_weight)
 
 
 def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, template: Any):
-    if _spark(X):
-        _refuse("A multiclass frozen model")
     return _multiclass_wrappers.fit_multiclass_calibration(owner, X, y, sample_weight, template)
 
 
 def first_block_row_costs(policy: Any, X: Any, k: int):
-    if _spark(X):
-        _refuse("A cost policy with a multiclass model or costs as a function of X")
     return _multiclass_wrappers.first_block_row_costs(policy, X, k)
 
 
 def heldout_cost_dask(policy: Any, X: Any, y: Any, sample_weight: Any) -> float:
-    if _spark(X):
-        _refuse("A cost policy with a multiclass model or costs as a function of X")
     return _multiclass_wrappers.heldout_cost_dask(policy, X, y, sample_weight)

@@ -1,8 +1,10 @@
-"""Multiclass prior shift on Dask input: EM, BBSE and bias-corrected scaling as reductions.
+"""Multiclass prior shift on Dask or Spark input: EM, BBSE and bias-corrected scaling as
+reductions.
 
 A multiclass posterior vector has no one-dimensional score to tally, so nothing is binned here.
-Instead the model's posteriors stay on the workers (persisted, block by block) and every step of
-the fits is a sum over rows computed per block and added on the client:
+Instead the model's posteriors stay where the rows live (persisted Dask blocks, or a cached Spark
+DataFrame of blocks; see :mod:`probwrap.scale._rows`) and every step of the fits is a sum over rows
+computed per block and added on the client (the driver):
 
 - bias-corrected temperature / vector scaling: each Newton step needs the weighted log loss, its
   gradient and Hessian (sizes k and k x k) — one pass over the blocks per evaluation;
@@ -25,14 +27,8 @@ from typing import Any
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 
-from ._dask import (
-    _aligned_blocks,
-    _frozen_multiclass,
-    _import_dask,
-    _persist,
-    _reduce,
-    _row_blocks,
-)
+from ._dask import _frozen_multiclass
+from ._rows import rows_of
 
 __all__ = ["fit_multiclass_source", "estimate_multiclass_target"]
 
@@ -128,7 +124,7 @@ def _class_score_sums(block, calibrator, src):
 
 
 def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
-    """Fit a :class:`probwrap.shift.PriorEstimator` from labelled multiclass Dask rows.
+    """Fit a :class:`probwrap.shift.PriorEstimator` from labelled multiclass Dask or Spark rows.
 
     Sets ``estimator_``, ``classes_`` (and feature attributes) on ``owner``; returns the
     estimator, whose ``n_resamples`` is 0 (no bootstrap for multiclass Dask input).
@@ -136,18 +132,11 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     from ..shift import PriorEstimator
     from ..shift._calibration import BiasCorrectedScaling, _floor, _newton, scale_penalty
 
-    dask, _ = _import_dask()
     estimator, classes = _frozen_multiclass(owner, y)
     k = classes.shape[0]
-    blocks, lengths = _row_blocks(X)
-    ys = _aligned_blocks(y, "y", X, blocks, lengths)
-    ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
-    make = dask.delayed(_source_block, pure=True)
-    parts = _persist(
-        dask, [make(estimator, classes, b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
-    )
+    parts = rows_of(X, y, sample_weight, estimator).persist(_source_block, estimator, classes)
     try:
-        class_weight, squared_weight, positive_rows = _reduce(dask, _counts, parts, k)
+        class_weight, squared_weight, positive_rows = parts.reduce(_counts, k)
         total = float(class_weight.sum())
         if total <= 0:
             raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
@@ -180,7 +169,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
                 key = theta.tobytes()
                 if key not in cache:
                     cache.clear()
-                    cache[key] = _reduce(dask, _scaling_terms, parts, theta, n_scale, k, total)
+                    cache[key] = parts.reduce(_scaling_terms, theta, n_scale, k, total)
                 return cache[key]
 
             def loss_grad(theta):
@@ -199,10 +188,10 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             cal.n_classes_ = k
             cal.converged_ = bool(converged)
             cal.floor_ = _floor(n_rows, k)
-        hard, soft = _reduce(dask, _confusions, parts, cal, k)
-        su, suu, sw, sww = _reduce(dask, _class_score_sums, parts, cal, class_weight / total)
+        hard, soft = parts.reduce(_confusions, cal, k)
+        su, suu, sw, sww = parts.reduce(_class_score_sums, cal, class_weight / total)
     finally:
-        parts.clear()  # release the persisted blocks on the workers
+        parts.release()  # release the persisted blocks on the workers
     est.n_classes_ = k
     est.calibrator_ = cal
     est.source_prior_ = class_weight / total
@@ -246,7 +235,7 @@ def _means(block, k):
     return w @ p, hard, np.array([w.sum(), float(np.dot(w, w)), p.shape[0], entropy])
 
 
-def _em_dask(dask, parts, src, init, total, tol, max_iter, pseudo=None, scale=1.0):
+def _em_dask(parts, src, init, total, tol, max_iter, pseudo=None, scale=1.0):
     """EM of probwrap.shift.em_prior as reductions: same update (weights times ``scale``, plus
     the Dirichlet pseudo-rows ``pseudo``) and the same stopping rule on the bound of the
     distance to the fixed point; returns (prior, n_iter, converged, distance)."""
@@ -254,7 +243,7 @@ def _em_dask(dask, parts, src, init, total, tol, max_iter, pseudo=None, scale=1.
     prior = init.copy()
     prev, dist = np.inf, np.inf
     for it in range(1, max_iter + 1):
-        new = (scale * _reduce(dask, _em_step, parts, prior / src) + pseudo) / (
+        new = (scale * parts.reduce(_em_step, prior / src) + pseudo) / (
             scale * total + pseudo.sum()
         )
         new = new / new.sum()
@@ -269,30 +258,29 @@ def _em_dask(dask, parts, src, init, total, tol, max_iter, pseudo=None, scale=1.
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None):
-    """Prior estimate (a :class:`probwrap.shift.PriorEstimate`) of unlabelled multiclass Dask rows.
+    """Prior estimate (a :class:`probwrap.shift.PriorEstimate`) of unlabelled multiclass Dask or
+    Spark rows.
 
     No interval (``interval=None``).
     """
     from ..shift import PriorEstimate, acc_prior, bbse_prior
 
-    dask, _ = _import_dask()
     k = est.n_classes_
-    blocks, lengths = _row_blocks(X)
-    ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
-    make = dask.delayed(_target_block, pure=True)
-    parts = _persist(dask, [make(estimator, est.calibrator_, b, wb) for b, wb in zip(blocks, ws, strict=True)])
+    parts = rows_of(X, None, sample_weight, estimator).persist(
+        _target_block, estimator, est.calibrator_
+    )
     try:
-        soft_mean, hard_mean, (total, squared, n_rows, entropy) = _reduce(dask, _means, parts, k)
+        soft_mean, hard_mean, (total, squared, n_rows, entropy) = parts.reduce(_means, k)
         if total <= 0:
             raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
         src = est.source_prior_
         method = est.method
         n_iter, converged, distance = 0, True, 0.0
         n_eff = total**2 / squared
-        su, suu = _reduce(dask, _score_sums, parts, None, src)
+        su, suu = parts.reduce(_score_sums, None, src)
         if method == "em":
             prior, n_iter, converged, distance = _em_dask(
-                dask, parts, src, src.copy(), total, float(est.tol), int(est.max_iter),
+                parts, src, src.copy(), total, float(est.tol), int(est.max_iter),
                 pseudo=float(est.prior_strength) * src, scale=n_eff / total,
             )
             if not converged:
@@ -315,7 +303,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
                 point = acc_prior(mu[None, :], conf, soft=True)
             prior = point.prior
     finally:
-        parts.clear()
+        parts.release()
     from ..shift._shift_tests import _null_harm_scale_moments, _score_stat_moments
 
     mean = su / total

@@ -1,9 +1,10 @@
-"""CalibrationWrapper and CostPolicyWrapper on multiclass Dask input.
+"""CalibrationWrapper and CostPolicyWrapper on multiclass (or costs-by-X) Dask or Spark input.
 
 Temperature scaling by reductions (each evaluation of the loss slope one pass over the blocks),
 binary maps fitted one-vs-rest on per-class score tallies from one pass, and the held-out cost
-of a fixed cost rule. The model's outputs stay on the workers; the client holds sums only. (The
-multiclass prior shift is in :mod:`probwrap.scale._multiclass`.)
+of a fixed cost rule. The model's outputs stay where the rows live (Dask blocks or Spark
+partitions, through :mod:`probwrap.scale._rows`); the client holds sums only. (The multiclass prior
+shift is in :mod:`probwrap.scale._multiclass`.)
 """
 
 from __future__ import annotations
@@ -77,7 +78,8 @@ def _ovr_tallies_block(owner, resolution, Xb, yb, wb):
 
 
 def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, template: Any):
-    """Fit ``owner.calibrator_`` (a CalibrationWrapper) from labelled multiclass Dask rows.
+    """Fit ``owner.calibrator_`` (a CalibrationWrapper) from labelled multiclass Dask or Spark
+    rows.
 
     Temperature scaling: the root of the loss slope in ``log(1 / T)`` found by Brent's method
     on the same bracket as in memory, every slope evaluation one reduction over the persisted
@@ -95,18 +97,9 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
         _prior_slope,
         _valid_shrinkage,
     )
-    from ._dask import (
-        _aligned_blocks,
-        _frozen_multiclass,
-        _import_dask,
-        _persist,
-        _reduce,
-        _row_blocks,
-        _tree_merge,
-        owner_resolution,
-    )
+    from ._dask import _frozen_multiclass, owner_resolution
+    from ._rows import rows_of
 
-    dask, _ = _import_dask()
     estimator, classes = _frozen_multiclass(owner, y)
     k = classes.shape[0]
     owner.estimator_ = estimator
@@ -116,16 +109,11 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
         owner.n_features_in_ = estimator.n_features_in_
     if hasattr(estimator, "feature_names_in_"):
         owner.feature_names_in_ = estimator.feature_names_in_
-    blocks, lengths = _row_blocks(X)
-    ys = _aligned_blocks(y, "y", X, blocks, lengths)
-    ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
+    rows = rows_of(X, y, sample_weight, estimator)
     if isinstance(template, TemperatureMap):
-        make = dask.delayed(_wrapper_scores_block, pure=True)
-        parts = _persist(
-            dask, [make(owner, template, b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
-        )
+        parts = rows.persist(_wrapper_scores_block, owner, template)
         try:
-            sq, total, total_sq, n_rows = _reduce(dask, _square_terms, parts)
+            sq, total, total_sq, n_rows = parts.reduce(_square_terms)
             if total <= 0:
                 raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
             cal = clone(template)
@@ -152,7 +140,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
             counts = None
             if template.smooth_targets:
                 # smoothed targets need the weighted class counts (see TemperatureMap)
-                counts = _reduce(dask, _class_weight_terms, parts, k) * count_scale
+                counts = parts.reduce(_class_weight_terms, k) * count_scale
                 cal._set_floor(np.array([n_eff]), k)
             elif shrinkage > 0:
                 cal._set_floor(np.array([n_eff]), k, rule="half")
@@ -163,9 +151,14 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
             lo, hi = -np.log(scale) - _LOG_SPAN, -np.log(scale) + _LOG_SPAN
             lam = shrinkage / n_eff
 
+            seen: dict = {}  # the ends of the bracket are asked for twice: one pass each
+
             def slope(log_beta: float) -> float:
-                data = float(_reduce(dask, _temperature_terms, parts, log_beta, total, counts)[0])
-                return data + _prior_slope(float(np.exp(log_beta)), lam, 1.0 / scale)[0]
+                if log_beta not in seen:
+                    data = float(parts.reduce(_temperature_terms, log_beta, total, counts)[0])
+                    seen[log_beta] = data + _prior_slope(float(np.exp(log_beta)), lam,
+                                                         1.0 / scale)[0]
+                return seen[log_beta]
 
             if slope(lo) >= 0 or slope(hi) <= 0:
                 log_beta = lo if slope(lo) >= 0 else hi
@@ -186,21 +179,14 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
             cal.temperature_ = float(np.exp(-float(log_beta)))
             return cal
         finally:
-            parts.clear()
+            parts.release()
     if getattr(template, "supports_multiclass", False):
         raise ValueError(
-            f"{type(template).__name__} is not supported for multiclass Dask input; use "
+            f"{type(template).__name__} is not supported for multiclass Dask or Spark input; use "
             "'temperature' or a binary map (fitted one-vs-rest)."
         )
-    make = dask.delayed(_ovr_tallies_block, pure=True)
-    resolution = owner_resolution(owner)
-    per_block = [
-        make(owner, resolution, b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)
-    ]
-    pick = dask.delayed(lambda ts, j: ts[j], pure=True)
-    merged = dask.compute(
-        *[_tree_merge(dask, [pick(t, j) for t in per_block]) for j in range(k)]
-    )
+    # one pass: every block tallies each class's one-vs-rest scores; merged class by class
+    merged = rows.map_reduce(_ovr_tallies_block, owner, owner_resolution(owner))
     if merged[0].total_weight <= 0:
         raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
     maps: list = []
@@ -245,27 +231,21 @@ def _cost_block(policy, Xb, yb, wb):
 
 
 def first_block_row_costs(policy: Any, X: Any, k: int) -> np.ndarray:
-    """``costs(X)`` of the first Dask block (validated), to learn the number of actions."""
-    from ._dask import _import_dask, _row_blocks
+    """``costs(X)`` of the first Dask block or first Spark rows (validated), to learn the number
+    of actions."""
+    from ._rows import rows_of
 
-    dask, _ = _import_dask()
-    blocks, _ = _row_blocks(X)
-    return dask.delayed(policy._row_costs, pure=True)(blocks[0], k).compute()
+    return rows_of(X, None, None, policy.estimator).apply_first(policy._row_costs, k)
 
 
 def heldout_cost_dask(policy: Any, X: Any, y: Any, sample_weight: Any) -> float:
-    """Weighted mean realised cost of a fitted policy's actions on labelled Dask rows."""
-    from ._dask import _aligned_blocks, _import_dask, _row_blocks
+    """Weighted mean realised cost of a fitted policy's actions on labelled Dask or Spark rows
+    (``costs(X)`` evaluated block by block where the rows live)."""
+    from ._rows import rows_of
 
-    dask, _ = _import_dask()
     if y is None:
         raise ValueError(f"{type(policy).__name__} requires y to be passed, but the target y is None.")
-    blocks, lengths = _row_blocks(X)
-    ys = _aligned_blocks(y, "y", X, blocks, lengths)
-    ws = _aligned_blocks(sample_weight, "sample_weight", X, blocks, lengths)
-    parts = [(b, yb, wb) for b, yb, wb in zip(blocks, ys, ws, strict=True)]
-    call = dask.delayed(_cost_block, pure=True)
-    sums = np.sum(dask.compute(*[call(policy, *part) for part in parts]), axis=0)
+    sums = rows_of(X, y, sample_weight, policy.estimator_).map_reduce(_cost_block, policy)
     if sums[1] <= 0:
         raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
     return float(sums[0] / sums[1])

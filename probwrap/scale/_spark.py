@@ -23,25 +23,28 @@ from ._tally import (
     DEFAULT_RESOLUTION,
     ScoreTally,
     _check_resolution,
+    _combine,
     _tally_block,
     merge_tallies,
-    replicate_seed,
 )
 
 __all__ = [
+    "SparkRows",
     "add_predictions",
-    "heldout_from_spark",
     "is_spark_frame",
     "monitor_spark",
     "spark_tally_counts",
     "spark_tally_of_model",
     "spark_tally_scores",
-    "unlabelled_proba_from_spark",
 ]
 
 #: Rows gathered from Arrow batches before one chunk is tallied (bounds an executor's memory at a
 #: few tens of MB per task while keeping the number of merges per partition small).
 CHUNK_ROWS = 1_000_000
+
+#: Rows per block kept by ``SparkRows.persist`` (one cached row holds one pickled block: with k
+#: classes about 16 (k + 1) bytes per row, so a few MB per cached row).
+PERSIST_ROWS = 100_000
 
 
 def is_spark_frame(obj: Any) -> bool:
@@ -68,13 +71,44 @@ class _Held:
         self.value = value
 
 
+#: Values unpickled from broadcasts on this Python worker, by a key made when each was sent (the
+#: few most recent: a worker process is reused across tasks and jobs).
+_UNPICKLED: dict = {}
+
+
+class _Shipped:
+    """A value sent to the executors once as a broadcast of its cloudpickle bytes.
+
+    Broadcast variables are pickled with the standard pickle, which cannot carry functions
+    defined inside other functions or lambdas (a user's ``costs(X)`` often is one); cloudpickle
+    (bundled with PySpark) can. Each Python worker unpickles the bytes once.
+    """
+
+    def __init__(self, broadcast: Any) -> None:
+        import uuid
+
+        self._broadcast = broadcast
+        self._key = uuid.uuid4().hex
+
+    @property
+    def value(self) -> Any:
+        key = self._key
+        if key not in _UNPICKLED:
+            if len(_UNPICKLED) >= 4:
+                _UNPICKLED.pop(next(iter(_UNPICKLED)))
+            _UNPICKLED[key] = pickle.loads(self._broadcast.value)
+        return _UNPICKLED[key]
+
+
 def _broadcast(frame: Any, value: Any) -> Any:
     """Send ``value`` to the executors once (a Spark broadcast variable)."""
     try:
         context = frame.sparkSession.sparkContext
     except Exception:  # Spark Connect: no SparkContext; the value travels with the function
         return _Held(value)
-    return context.broadcast(value)
+    from pyspark import cloudpickle
+
+    return _Shipped(context.broadcast(cloudpickle.dumps(value)))
 
 
 def _column(frame: Any, value: Any, what: str, *, required: bool = False) -> str | None:
@@ -323,77 +357,149 @@ def spark_tally_of_model(
     )
 
 
-# -- the wrappers' Spark path --------------------------------------------------------------------
-def _frozen_binary(owner: Any) -> Any:
-    from sklearn.frozen import FrozenEstimator
+# -- rows kept in Spark partitions, for the shared driver-side fits (see ._rows) --------------------
+def _partition_id() -> int:
+    from pyspark import TaskContext
 
-    estimator = owner.estimator
-    if not isinstance(estimator, FrozenEstimator):
-        raise ValueError(
-            "Spark input needs an already fitted estimator wrapped in "
-            "sklearn.frozen.FrozenEstimator: the wrappers do not fit models on Spark data, they "
-            f"only tally a frozen model's predictions; got {type(estimator).__name__}."
+    context = TaskContext.get()
+    return context.partitionId() if context is not None else 0
+
+
+def _chunks(batches: Any, rows: int) -> Any:
+    """The Arrow batches of one partition regrouped into pandas frames of at least ``rows`` rows
+    (the last one shorter)."""
+    import pandas as pd
+
+    held: list = []
+    n_held = 0
+    for pdf in batches:
+        if len(pdf) == 0:
+            continue
+        held.append(pdf)
+        n_held += len(pdf)
+        if n_held >= rows:
+            yield held[0] if len(held) == 1 else pd.concat(held, ignore_index=True)
+            held, n_held = [], 0
+    if held:
+        yield held[0] if len(held) == 1 else pd.concat(held, ignore_index=True)
+
+
+def _split(features: list, named: bool, label: str | None, weight: str | None, pdf: Any) -> tuple:
+    """``(Xb, yb, wb)`` of one chunk of rows (``(Xb, wb)`` without a label column)."""
+    Xb = _features(pdf, features, named)
+    wb = None if weight is None else pdf[weight].to_numpy(dtype=float, na_value=np.nan)
+    if label is None:
+        return Xb, wb
+    return Xb, pdf[label].to_numpy(), wb
+
+
+def _gather(rows: list) -> Any:
+    """Partial results of the partitions (rows of ``partition, value``) combined in partition
+    order, so the sum does not depend on which task finished first."""
+    if not rows:
+        raise ValueError("The Spark DataFrame has no rows; at least one row is needed.")
+    rows = sorted(rows, key=lambda r: r["partition"])
+    out = pickle.loads(bytes(rows[0]["value"]))
+    for r in rows[1:]:
+        out = _combine(out, pickle.loads(bytes(r["value"])))
+    return out
+
+
+class SparkBlocks:
+    """Blocks of values kept in a cached Spark DataFrame (see :meth:`SparkRows.persist`)."""
+
+    def __init__(self, cached: Any) -> None:
+        self._cached = cached
+
+    def reduce(self, fn: Any, *args: Any) -> Any:
+        """Sum over the kept blocks of ``fn(block, *args)`` (one small Spark job)."""
+        import pandas as pd
+
+        def reduce_partition(batches):
+            total = None
+            for pdf in batches:
+                for blob in pdf["block"]:
+                    r = fn(pickle.loads(blob), *args)
+                    total = r if total is None else _combine(total, r)
+            if total is not None:
+                yield pd.DataFrame({"partition": [_partition_id()], "value": [pickle.dumps(total)]})
+
+        return _gather(
+            self._cached.mapInPandas(reduce_partition, "partition int, value binary").collect()
         )
-    if len(getattr(estimator, "classes_", ())) != 2:
-        raise ValueError(
-            "Spark input is supported for binary classifiers; the frozen estimator has "
-            f"{len(getattr(estimator, 'classes_', ()))} classes. Tally each class's one-vs-rest "
-            "scores with probwrap.scale.tally_scores instead."
-        )
-    return estimator
+
+    def release(self) -> None:
+        """Drop the cached blocks from the executors."""
+        self._cached.unpersist()
 
 
-def heldout_from_spark(owner: Any, X: Any, y: Any, sample_weight: Any, response: str):
-    """Held-out predictions of a frozen binary estimator on a Spark DataFrame, as tally rows.
+class SparkRows:
+    """The rows of a Spark DataFrame, with label and weight columns, for the shared fits.
 
-    ``y`` (and ``sample_weight``) name columns of ``X``. Same result object as the Dask path.
+    The twin of :class:`probwrap.scale._dask.DaskRows` (same three methods; see
+    :mod:`probwrap.scale._rows`). Each partition's rows reach Python through ``mapInPandas`` and
+    are handed on in chunks of up to ``CHUNK_ROWS`` rows; the function and its arguments go to
+    the executors as one broadcast variable; partial results are combined on the driver in
+    partition order. ``y`` and ``sample_weight`` name columns; the estimator receives its
+    feature columns (``feature_names_in_``, else every other column in frame order).
     """
-    from ._dask import heldout_rows_from_tally
 
-    estimator = _frozen_binary(owner)
-    if y is None:
-        raise ValueError(
-            f"{type(owner).__name__} requires y to be passed, but the target y is None; with a "
-            "Spark DataFrame give the name of its label column."
+    engine = "Spark"
+
+    def __init__(self, frame: Any, y: Any, sample_weight: Any, estimator: Any) -> None:
+        _import_pyspark()
+        self._frame = frame
+        label = _column(frame, y, "y")
+        weight = _column(frame, sample_weight, "sample_weight")
+        named_cols = [c for c in (label, weight) if c is not None]
+        features, named = _feature_columns(estimator, frame, named_cols)
+        self._columns = [*features, *named_cols]
+        self._split = (features, named, label, weight)
+
+    def map_reduce(self, fn: Any, *args: Any) -> Any:
+        import pandas as pd
+
+        shared = _broadcast(self._frame, (fn, args))
+        spec = self._split
+
+        def map_partition(batches):
+            f, a = shared.value
+            total = None
+            for pdf in _chunks(batches, CHUNK_ROWS):
+                r = f(*a, *_split(*spec, pdf))
+                total = r if total is None else _combine(total, r)
+            if total is not None:
+                yield pd.DataFrame({"partition": [_partition_id()], "value": [pickle.dumps(total)]})
+
+        return _gather(
+            self._frame.select(*self._columns)
+            .mapInPandas(map_partition, "partition int, value binary")
+            .collect()
         )
-    n_rep = int(owner._dask_replicates()) if hasattr(owner, "_dask_replicates") else 0
-    seed = replicate_seed(getattr(owner, "random_state", None)) if n_rep else 0
-    from ._dask import owner_resolution
 
-    tally = spark_tally_of_model(
-        estimator, response, X, _column(X, y, "y", required=True), sample_weight,
-        resolution=owner_resolution(owner), n_replicates=n_rep, seed=seed, stream=0,
-    )
-    return heldout_rows_from_tally(owner, estimator, tally, response)
+    def persist(self, make: Any, *args: Any) -> SparkBlocks:
+        import pandas as pd
 
+        shared = _broadcast(self._frame, (make, args))
+        spec = self._split
 
-def unlabelled_proba_from_spark(
-    estimator: Any,
-    X: Any,
-    sample_weight: Any = None,
-    *,
-    n_replicates: int = 0,
-    random_state: Any = None,
-    resolution: float = DEFAULT_RESOLUTION,
-):
-    """Binary posteriors of an unlabelled Spark DataFrame as tally rows: ``(proba, w, tally)``."""
-    classes = np.asarray(estimator.classes_)
-    if classes.shape[0] != 2:
-        raise ValueError(
-            f"Spark input is supported for binary classifiers; the estimator has "
-            f"{classes.shape[0]} classes."
-        )
-    seed = replicate_seed(random_state) if n_replicates else 0
-    tally = spark_tally_of_model(
-        estimator, "predict_proba", X, None, sample_weight, resolution=resolution,
-        n_replicates=n_replicates, seed=seed, stream=1,
-    )
-    if tally.total_weight <= 0:
-        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
-    proba, w = tally.to_scores(proba=True)
-    return proba, w, tally
+        def make_blocks(batches):
+            f, a = shared.value
+            for pdf in _chunks(batches, PERSIST_ROWS):
+                yield pd.DataFrame({"block": [pickle.dumps(f(*a, *_split(*spec, pdf)))]})
+
+        cached = self._frame.select(*self._columns).mapInPandas(make_blocks, "block binary")
+        return SparkBlocks(cached.cache())
+
+    def apply_first(self, fn: Any, *args: Any) -> Any:
+        features, named, _, _ = self._split
+        pdf = self._frame.select(*features).limit(1000).toPandas()
+        if len(pdf) == 0:
+            raise ValueError("The Spark DataFrame has no rows; at least one row is needed.")
+        return fn(_features(pdf, features, named), *args)
 
 
+# -- the wrappers' Spark path --------------------------------------------------------------------
 def _spark_type(T: Any, dtype: np.dtype) -> Any:
     kind = np.dtype(dtype).kind
     if kind == "b":
@@ -526,14 +632,16 @@ def add_predictions(model: Any, frame: Any, *, prefix: str = "") -> Any:
     Returns
     -------
     pyspark.sql.DataFrame
-        ``frame`` with the columns
+        ``frame`` with the columns (all doubles but the action)
 
-        * ``probability``: ``predict_proba`` — for a binary model the probability of
-          ``classes_[1]`` (a double), otherwise an array of the class probabilities in
-          ``classes_`` order. For a :class:`~probwrap.PriorShiftWrapper` these are the
-          calibrated probabilities *before* the prior adjustment;
-        * ``adjusted_probability`` (a :class:`~probwrap.PriorShiftWrapper` only): the
-          probabilities re-weighted to its ``applied_prior_`` (its ``predict_proba``);
+        * ``probability``: ``predict_proba`` — for a binary model one column, the probability
+          of ``classes_[1]``; for a multiclass model one column per class,
+          ``probability_<class>`` in ``classes_`` order (``probability_setosa``, ...). For a
+          :class:`~probwrap.PriorShiftWrapper` these are the calibrated probabilities
+          *before* the prior adjustment;
+        * ``adjusted_probability`` (``adjusted_probability_<class>`` for a multiclass model;
+          a :class:`~probwrap.PriorShiftWrapper` only): the probabilities re-weighted to its
+          ``applied_prior_`` (its ``predict_proba``);
         * ``action``: ``predict`` (the action of a cost policy, otherwise the class).
 
     Examples
@@ -562,26 +670,39 @@ def add_predictions(model: Any, frame: Any, *, prefix: str = "") -> Any:
     features, named = _feature_columns(
         model if getattr(model, "feature_names_in_", None) is not None else inner, frame, []
     )
-    names = {key: prefix + key for key in ("probability", "adjusted_probability", "action")}
-    if not adjusted:
-        names.pop("adjusted_probability")
-    taken = [n for n in names.values() if n in frame.columns]
+    def per_class(stem: str) -> list:
+        # binary: one column (the probability of classes_[1]); multiclass: one per class
+        return [prefix + stem] if binary else [f"{prefix}{stem}_{c}" for c in classes.tolist()]
+
+    names = {"probability": per_class("probability"), "action": [prefix + "action"]}
+    if adjusted:
+        names["adjusted_probability"] = per_class("adjusted_probability")
+    added = [n for group in names.values() for n in group]
+    if len(set(added)) != len(added):
+        raise ValueError(
+            f"The class labels {classes.tolist()} give clashing column names {added}; relabel "
+            "the classes."
+        )
+    taken = [n for n in added if n in frame.columns]
     if taken:
         raise ValueError(
             f"The Spark DataFrame already has column(s) {taken}; give a `prefix` for the added "
             "columns."
         )
-    proba_type = T.DoubleType() if binary else T.ArrayType(T.DoubleType())
     action_type = _spark_type(T, actions.dtype)
-    fields = [T.StructField(names["probability"], proba_type)]
+    fields = [T.StructField(n, T.DoubleType()) for n in names["probability"]]
     if adjusted:
-        fields.append(T.StructField(names["adjusted_probability"], proba_type))
-    fields.append(T.StructField(names["action"], action_type))
+        fields += [T.StructField(n, T.DoubleType()) for n in names["adjusted_probability"]]
+    fields.append(T.StructField(names["action"][0], action_type))
     schema = T.StructType(fields)
     shared = _broadcast(frame, model)
 
-    def as_column(p: np.ndarray) -> Any:
-        return p[:, 1] if binary else list(p)
+    def put(out: dict, key: str, p: np.ndarray) -> None:
+        if binary:
+            out[names[key][0]] = p[:, 1]
+        else:
+            for j, name in enumerate(names[key]):
+                out[name] = p[:, j]
 
     def score(rows: pd.DataFrame) -> pd.DataFrame:
         fitted = shared.value
@@ -591,13 +712,11 @@ def add_predictions(model: Any, frame: Any, *, prefix: str = "") -> Any:
         out = {}
         if adjusted:
             raw = np.asarray(fitted.estimator_.predict_proba(X), dtype=float)
-            out[names["probability"]] = as_column(fitted.prior_estimator_.calibrate(raw))
-            out[names["adjusted_probability"]] = as_column(
-                np.asarray(fitted.predict_proba(X), dtype=float)
-            )
+            put(out, "probability", np.asarray(fitted.prior_estimator_.calibrate(raw)))
+            put(out, "adjusted_probability", np.asarray(fitted.predict_proba(X), dtype=float))
         else:
-            out[names["probability"]] = as_column(np.asarray(fitted.predict_proba(X), dtype=float))
-        out[names["action"]] = _python_value(T, action_type, np.asarray(fitted.predict(X)))
+            put(out, "probability", np.asarray(fitted.predict_proba(X), dtype=float))
+        out[names["action"][0]] = _python_value(T, action_type, np.asarray(fitted.predict(X)))
         return pd.DataFrame(out)
 
     score.__annotations__ = {"rows": pd.DataFrame, "return": pd.DataFrame}
@@ -606,16 +725,5 @@ def add_predictions(model: Any, frame: Any, *, prefix: str = "") -> Any:
     scored = frame.withColumn(tmp, udf(F.struct(*[F.col(c) for c in features])))
     return scored.select(
         *[F.col(c) for c in frame.columns],
-        *[F.col(f"{tmp}.{f.name}").alias(f.name) for f in fields],
+        *[F.col(tmp).getField(f.name).alias(f.name) for f in fields],
     )
-
-
-def refuse_spark(what: str) -> None:
-    """Raise the error for a Spark DataFrame given where only Dask or in-memory rows work."""
-    raise ValueError(
-        f"{what} is not supported for a Spark DataFrame: Spark input covers binary frozen "
-        "models (fit, adapt, monitor by a batch column) and scoring with "
-        "probwrap.scale.add_predictions; for multiclass models or costs as a function of X use "
-        "Dask or in-memory rows."
-    )
-

@@ -452,3 +452,13 @@ def merge_tallies(tallies: Any) -> ScoreTally:
             for i in range(0, len(items), 2)
         ]
     return items[0]
+
+
+def _combine(a: Any, b: Any) -> Any:
+    """Sum of two partial results of a reduction over row blocks: tallies merge, tuples and lists
+    combine entry by entry, everything else (arrays, numbers) adds."""
+    if isinstance(a, ScoreTally):
+        return a.merge(b)
+    if isinstance(a, (tuple, list)):
+        return type(a)(_combine(x, y) for x, y in zip(a, b, strict=True))
+    return a + b

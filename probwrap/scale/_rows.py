@@ -1,0 +1,134 @@
+"""Rows kept where they live — Dask blocks or Spark partitions — behind one small interface.
+
+The driver-side fits (the multiclass calibration maps and priors in :mod:`._multiclass` and
+:mod:`._multiclass_wrappers`, the held-out cost of a cost rule, the binary held-out tallies)
+are written once against this interface and run unchanged on either engine:
+
+- ``rows.map_reduce(fn, *args)``: the sum (tallies merge) over row blocks of
+  ``fn(*args, Xb, yb, wb)`` — ``fn(*args, Xb, wb)`` for unlabelled rows — computed where the
+  rows live; only the small results travel;
+- ``rows.persist(make, *args)``: ``make(*args, Xb, yb, wb)`` of every block kept where the block
+  lives (Dask: persisted on the workers; Spark: a cached DataFrame of pickled blocks), with
+  ``.reduce(fn, *args)`` summing ``fn(block, *args)`` over them and ``.release()``;
+- ``rows.apply_first(fn, *args)``: ``fn(Xb, *args)`` on the first block (to learn a shape).
+
+``Xb`` is what the estimator takes (a Dask block; for Spark the pandas DataFrame of the model's
+feature columns, or their NumPy array when the model has no feature names), ``yb`` the labels and
+``wb`` the weights (or None).
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from ._tally import DEFAULT_RESOLUTION, replicate_seed
+
+__all__ = ["heldout_from_rows", "rows_of", "unlabelled_proba_from_rows"]
+
+
+def _is_spark(X: Any) -> bool:
+    from ._spark import is_spark_frame
+
+    return is_spark_frame(X)
+
+
+def rows_of(X: Any, y: Any, sample_weight: Any, estimator: Any) -> Any:
+    """``X`` (with ``y`` and ``sample_weight``) as Dask or Spark rows for ``estimator``."""
+    if _is_spark(X):
+        from ._spark import SparkRows
+
+        return SparkRows(X, y, sample_weight, estimator)
+    from ._dask import DaskRows
+
+    return DaskRows(X, y, sample_weight, estimator)
+
+
+def _tally_step(X: Any) -> tuple[Any, str]:
+    """The engine's tally of a binary model's log-odds, and the engine's name."""
+    if _is_spark(X):
+        from ._spark import spark_tally_of_model
+
+        return spark_tally_of_model, "Spark"
+    from ._dask import dask_tally_of_model
+
+    return dask_tally_of_model, "Dask"
+
+
+def _check_binary(estimator: Any, engine: str) -> np.ndarray:
+    classes = np.asarray(estimator.classes_)
+    if classes.shape[0] != 2:
+        raise ValueError(
+            f"{engine} input is tallied for binary classifiers here; the estimator has "
+            f"{classes.shape[0]} classes (multiclass models take the multiclass path of the "
+            "wrappers)."
+        )
+    return classes
+
+
+def heldout_from_rows(owner: Any, X: Any, y: Any, sample_weight: Any, response: str):
+    """Held-out predictions of a frozen binary estimator on Dask or Spark rows, as tally rows.
+
+    The returned :class:`~probwrap._predictions.HeldOutPredictions` has one row per
+    (bin, class) of the tally, weighted by the tallied weight; ``from_tally`` is set. With a
+    Spark DataFrame ``y`` and ``sample_weight`` name its columns.
+    """
+    from sklearn.frozen import FrozenEstimator
+
+    from ._dask import heldout_rows_from_tally, owner_resolution
+
+    tally_of_model, engine = _tally_step(X)
+    estimator = owner.estimator
+    if not isinstance(estimator, FrozenEstimator):
+        raise ValueError(
+            f"{engine} input needs an already fitted estimator wrapped in "
+            f"sklearn.frozen.FrozenEstimator: the wrappers do not fit models on {engine} data, "
+            f"they only tally a frozen model's predictions; got {type(estimator).__name__}."
+        )
+    if y is None:
+        raise ValueError(
+            f"{type(owner).__name__} requires y to be passed, but the target y is None"
+            + ("; with a Spark DataFrame give the name of its label column." if engine == "Spark"
+               else ".")
+        )
+    _check_binary(estimator, engine)
+    # Wrappers that report bootstrap intervals ask for Poisson replicates (``_dask_replicates``),
+    # drawn per block from a generator seeded by their random_state and the block index.
+    n_rep = int(owner._dask_replicates()) if hasattr(owner, "_dask_replicates") else 0
+    seed = replicate_seed(getattr(owner, "random_state", None)) if n_rep else 0
+    tally = tally_of_model(
+        estimator, response, X, y, sample_weight, resolution=owner_resolution(owner),
+        n_replicates=n_rep, seed=seed, stream=0,
+    )
+    return heldout_rows_from_tally(owner, estimator, tally, response)
+
+
+def unlabelled_proba_from_rows(
+    estimator: Any,
+    X: Any,
+    sample_weight: Any = None,
+    *,
+    n_replicates: int = 0,
+    random_state: Any = None,
+    resolution: float = DEFAULT_RESOLUTION,
+):
+    """Binary posteriors of unlabelled Dask or Spark rows as tally rows:
+    ``(proba (m, 2), weights, tally)``.
+
+    Replicates (if any) use stream 1 of the seed, so they are independent of the labelled
+    tally's (stream 0) for the same ``random_state``.
+    """
+    tally_of_model, engine = _tally_step(X)
+    _check_binary(estimator, engine)
+    seed = replicate_seed(random_state) if n_replicates else 0
+    tally = tally_of_model(
+        estimator, "predict_proba", X, None, sample_weight, resolution=resolution,
+        n_replicates=n_replicates, seed=seed, stream=1,
+    )
+    if tally.n_rows == 0:
+        raise ValueError("`X` has no rows; a tally needs at least one row.")
+    if tally.total_weight <= 0:
+        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+    proba, w = tally.to_scores(proba=True)
+    return proba, w, tally
