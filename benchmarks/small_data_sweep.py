@@ -510,6 +510,85 @@ def cost_sweep(quick: bool, seeds) -> dict:
     return summary_rows
 
 
+def _cost_multiclass_sets(quick: bool):
+    X, y = load_iris(return_X_y=True)
+    yield "iris", X, y
+    X, y = load_wine(return_X_y=True)
+    yield "wine", X, y
+    if quick:
+        return
+    X, y = load_digits(return_X_y=True)
+    yield "digits", X, y
+    import statsmodels.api as sm
+
+    d = sm.datasets.anes96.load_pandas().data
+    yield "anes96 PID", d.drop(columns=["PID", "vote"]).to_numpy(float), d["PID"].to_numpy(int)
+
+
+def cost_sweep_multiclass(quick: bool, seeds) -> None:
+    """Tuned class offsets (settled toward zero) against the Bayes rule and the argmax.
+
+    Errors on true class j cost j + 1. ``tuned`` is CostPolicyWrapper(strategy="tuned") as
+    fitted today; ``plain_tuned`` the offsets of tune_class_offsets before settling (models
+    with predict_proba only)."""
+    from probwrap.decision import tune_class_offsets
+
+    cells: dict = collections.defaultdict(lambda: collections.defaultdict(list))
+    for dname, X, y in _cost_multiclass_sets(quick):
+        X = np.asarray(X, float)
+        classes, y = np.unique(y, return_inverse=True)
+        k = len(classes)
+        C = (1 - np.eye(k)) * (1 + np.arange(k))[:, None]
+        for seed in seeds:
+            rng = np.random.default_rng(seed)
+            idx = rng.permutation(len(y))
+            n_fit = min(len(y) // 3, 600)
+            fit, rest = idx[:n_fit], idx[n_fit:]
+            for mname, model in _cost_models(quick, seed):
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore")
+                    model.fit(X[fit], y[fit])
+                inner = FrozenEstimator(model)
+                proba = hasattr(model, "predict_proba")
+                if not proba:
+                    inner = CalibrationWrapper(inner, method="temperature")
+                for n in COST_SIZES:
+                    if len(rest) - n < 60:
+                        continue
+                    h = rest[rng.choice(len(rest), n, replace=False)]
+                    t = np.setdiff1d(rest, h)
+                    if len(np.unique(y[h])) < k:
+                        continue
+                    out = {}
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("ignore")
+                        for strat in ("tuned", "bayes"):
+                            cp = CostPolicyWrapper(inner, costs=C, strategy=strat).fit(X[h], y[h])
+                            out[strat] = C[y[t], cp.predict(X[t])].mean()
+                        out["argmax"] = C[y[t], model.predict(X[t])].mean()
+                        if proba:
+                            b = tune_class_offsets(model.predict_proba(X[h]), y[h], C).offsets
+                            q = model.predict_proba(X[t]) * np.exp(b)
+                            out["plain_tuned"] = C[y[t], np.argmin(q @ C, axis=1)].mean()
+                    for r, v in out.items():
+                        cells[(dname, mname, n)][r].append(v)
+            print(f"cost (multiclass): {dname} seed {seed} done", flush=True)
+    print("\nMulticlass, errors on class j cost j + 1: test cost of tuned class offsets over "
+          "that of the Bayes rule\nand of the argmax (geometric mean | worst cell)")
+    for mine in ("tuned", "plain_tuned"):
+        for n in COST_SIZES:
+            keys = [c for c in cells if c[2] == n and mine in cells[c]]
+            if not keys:
+                continue
+            line = f"  {mine:11} n={n:4d} ({len(keys):3d} cells)"
+            for other in ("bayes", "argmax"):
+                r = np.array([np.mean(cells[c][mine]) / max(np.mean(cells[c][other]), 1e-9)
+                              for c in keys])
+                gm = float(np.exp(np.mean(np.log(np.maximum(r, 1e-9)))))
+                line += f"   vs {other}: {gm:5.3f} | {r.max():5.2f}"
+            print(line)
+
+
 # --------------------------------------------------------------------------- main
 def main(argv: list[str]) -> None:
     quick = "--quick" in argv
@@ -517,6 +596,7 @@ def main(argv: list[str]) -> None:
     seeds = range(n_seeds)
     if "--only" in argv and argv[argv.index("--only") + 1] == "cost":
         cost_sweep(quick, seeds)
+        cost_sweep_multiclass(quick, seeds)
         return
     n_draws = 0
     for dname, X, y in data_sets(quick):

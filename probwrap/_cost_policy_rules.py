@@ -26,6 +26,7 @@ from .decision import (
     guaranteed_class_offsets,
     guaranteed_cutoff,
     plugin_cutoff,
+    settle_class_offsets,
     settle_cutoff,
     tune_class_offsets,
 )
@@ -191,7 +192,8 @@ class _RuleFitting:
             offsets = g.offsets
         elif self.strategy == "tuned" and self.costs is not None:
             res = tune_class_offsets(proba, ho.y_index, costs, sample_weight=ho.sample_weight)
-            offsets = res.offsets
+            offsets = settle_class_offsets(proba, ho.y_index, costs, res.offsets,
+                                           sample_weight=ho.sample_weight).offsets
         else:
             offsets = np.zeros(k)
         self.class_offsets_ = offsets

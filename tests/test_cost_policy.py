@@ -309,7 +309,9 @@ def test_tuned_fit_on_many_rows_keeps_the_thinned_curve_and_direct_heldout_cost(
     pol = CostPolicyWrapper(model, costs=C, strategy="tuned").fit(X, y)
     p = model.predict_proba(X)[:, 1]
     want = _thin_cost_curve(search_cutoff(p, y, C, score_bounds=(0.0, 1.0)), CURVE_POINTS)
-    assert pol.cutoff_ == want.cutoff
+    assert pol.cost_curve_.cutoff == want.cutoff
+    # the rule kept: settled on the full curve (here the plug-in cutoff; the curve is flat)
+    assert pol.cutoff_ == settle_cutoff(p, y, C).cutoff
     np.testing.assert_array_equal(pol.cost_curve_.cutoffs, want.cutoffs)
     np.testing.assert_array_equal(pol.cost_curve_.costs, want.costs)
     np.testing.assert_array_equal(pol.cost_curve_.flagged_share, want.flagged_share)

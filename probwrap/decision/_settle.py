@@ -21,7 +21,7 @@ from ..calibration._base import count_weights
 from ._costs import check_cost_matrix, plugin_cutoff
 from ._cutoff import CutoffSearchResult, _binary_targets, search_cutoff
 
-__all__ = ["SettledCutoff", "settle_cutoff"]
+__all__ = ["SettledCutoff", "SettledOffsets", "settle_class_offsets", "settle_cutoff"]
 
 
 @dataclass(frozen=True)
@@ -191,3 +191,109 @@ def settle_cutoff(
     chosen = float(cutoffs[cands[np.argmin(np.abs(cutoffs[cands] - t0))]])
     return SettledCutoff(chosen, float(t0), float(search.cutoff), False, float(ex_t),
                          float(se_t), level)
+
+
+@dataclass(frozen=True)
+class SettledOffsets:
+    """Outcome of :func:`settle_class_offsets`.
+
+    Attributes
+    ----------
+    offsets : ndarray of shape (n_classes,)
+        ``share * tuned``: the tuned offsets shrunk toward zero (the plain Bayes rule).
+    share : float in [0, 1]
+        How much of the tuned offsets is kept (0: the Bayes rule, 1: the tuned offsets).
+    excess : float
+        Held-out mean cost per row of the Bayes rule minus that of the tuned offsets.
+    excess_se : float
+        Standard error of ``excess`` (paired over rows, on Kish's effective sample size).
+    level : float
+        One-sided level of the test.
+    """
+
+    offsets: np.ndarray
+    share: float
+    excess: float
+    excess_se: float
+    level: float
+
+
+def settle_class_offsets(
+    proba: Any,
+    y: Any,
+    costs: Any,
+    offsets: Any,
+    *,
+    sample_weight: Any = None,
+    level: float = 0.05,
+    n_steps: int = 20,
+) -> SettledOffsets:
+    """Shrink tuned class offsets toward zero as far as held-out rows allow.
+
+    The multiclass counterpart of :func:`settle_cutoff`: along the path ``s * offsets``,
+    ``s = 0, 1/n_steps, ..., 1``, the smallest ``s`` whose held-out mean cost exceeds that of
+    the tuned offsets (``s = 1``) by no more than ``z`` standard errors of the paired per-row
+    difference (``z`` the one-sided normal quantile of ``1 - level``). ``s = 0`` is the plain
+    Bayes rule on the probabilities, which needs no held-out rows; the one-standard-error rule
+    of Breiman et al. (1984, sec. 3.4.3) with it as the simplest rule.
+
+    Parameters
+    ----------
+    proba : array-like of shape (n, n_classes)
+        Held-out probabilities.
+    y : array-like of int of shape (n,)
+        Class indices 0 .. n_classes - 1.
+    costs : array-like of shape (n_classes, n_actions) or (n, n_classes, n_actions)
+        Cost matrix, or one per row.
+    offsets : array-like of shape (n_classes,)
+        Tuned offsets (e.g. ``tune_class_offsets(...).offsets``).
+    sample_weight : array-like of shape (n,), default=None
+        Row frequencies (weights summing to less than the rows count as Kish's effective size).
+    level : float in (0, 0.5), default=0.05
+    n_steps : int, default=20
+        Points on the path from zero to ``offsets``.
+
+    Returns
+    -------
+    SettledOffsets
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.decision import settle_class_offsets
+    >>> p = np.array([[0.6, 0.3, 0.1], [0.2, 0.5, 0.3], [0.1, 0.2, 0.7], [0.5, 0.4, 0.1]])
+    >>> res = settle_class_offsets(p, [0, 1, 2, 1], 1 - np.eye(3), [0.0, 0.5, 0.0])
+    >>> res.share, res.offsets.tolist()  # four rows cannot show that the offsets help
+    (0.0, [0.0, 0.0, 0.0])
+    """
+    from ._offsets import _adjusted_expected, _check_offsets, _prepare, _realised
+
+    p, yi, matrix, w, unit = _prepare(proba, y, costs, sample_weight)
+    b = _check_offsets(offsets, p.shape[1])
+    level = _check_level(level)
+    if int(n_steps) < 1:
+        raise ValueError(f"`n_steps` must be a positive integer; got {n_steps!r}.")
+    total = float(w.sum())
+    # _prepare rescales the weights by a power of two; the count uses them as given
+    raw = w if sample_weight is None else check_sample_weight(sample_weight, w.shape[0])
+    n_eff = float(count_weights(raw[raw > 0])[0].sum())
+    z = NormalDist().inv_cdf(1.0 - level)
+
+    def row_costs(offs):
+        return _realised(matrix, yi, np.argmin(_adjusted_expected(p, matrix, offs), axis=1))
+
+    tuned = row_costs(b)
+    tol = 1e-9 * float(np.max(np.abs(matrix))) if matrix.size else 0.0
+    shares = np.arange(int(n_steps) + 1) / int(n_steps)
+    excess0 = se0 = 0.0
+    chosen = 1.0
+    for i, s in enumerate(shares):
+        d = row_costs(s * b) - tuned
+        mean = float(w @ d) / total
+        se = float(np.sqrt(max(float(w @ (d - mean) ** 2) / total, 0.0) / n_eff))
+        if i == 0:
+            excess0, se0 = mean, se
+        if mean <= z * se + tol:
+            chosen = float(s)
+            break
+    return SettledOffsets(chosen * b, chosen, excess0 * unit, se0 * unit, level)
