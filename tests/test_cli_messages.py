@@ -375,3 +375,17 @@ def test_semicolon_tab_and_decimal_comma_files_read_like_the_comma_file(files, t
         assert code == 0, (name, err)
         got, want = json.loads(out), json.loads(ref)
         assert got["cutoff"] == want["cutoff"] and got["n_positive"] == want["n_positive"], name
+
+
+def test_auto_candidates_print_the_standard_error_of_the_difference(files, tmp_path, capsys):
+    # The standard error in method_scores_ is that of a candidate's difference from the lowest
+    # log loss; it used to print as "(+- 0.00000)" beside the lowest, read as "no uncertainty".
+    code, out, err = run(capsys, "calibrate", "fit", "--scores", files / "held.csv",
+                         "--score-column", "risk", "--label-column", "damaged", "--method",
+                         "auto", "--out", tmp_path / "auto.json")
+    assert code == 0, err
+    assert "+-" not in out
+    assert "standard error of the difference from the lowest" in out
+    saved = json.loads((tmp_path / "auto.json").read_text())["metadata"]["auto_log_loss"]
+    lowest = min(saved, key=lambda m: saved[m]["log_loss"])
+    assert re.search(rf"^  {lowest}\s+\S+\s+\(lowest\)", out, flags=re.M)
