@@ -318,6 +318,15 @@ class _AutoChoice:
             losses[name] = per_row
             if boundary is None:
                 eligible.append(name)
+        failed = {nm: txt for nm, txt in notes.items() if txt.startswith("failed in fold")}
+        if failed and losses:
+            warnings.warn(
+                "CalibrationWrapper(method='auto'): candidate(s) "
+                + "; ".join(f"{plain(nm)!r} {txt}" for nm, txt in failed.items())
+                + "; they are left out of the choice (see method_notes_).",
+                UserWarning,
+                stacklevel=3,
+            )
         wn = w / w.sum()
         # Kish's effective sample size: the standard error does not depend on the weights' scale
         n_eff = float(w.sum() ** 2 / (w @ w))

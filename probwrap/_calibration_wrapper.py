@@ -21,6 +21,7 @@ from ._heldout import (
 from ._validation import plain
 from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
 from .calibration._binning import BinningMap
+from .calibration._identity import IdentityMap
 from .calibration._isotonic import IsotonicMap
 from .calibration._logodds import DEFAULT_CLIP
 from .calibration._venn_abers import VennAbersMap
@@ -32,6 +33,18 @@ _ORDER_BASED = (IsotonicMap, BinningMap, VennAbersMap)
 
 #: Exact zero probabilities become this (the smallest positive float) before taking logs.
 _TINY = np.nextafter(0.0, 1.0)
+
+
+def _kept_probability_map() -> IdentityMap:
+    """The one-vs-rest entry of a class with no calibration rows: the model's own probability
+    (an :class:`IdentityMap` on that class's binary log-odds, with no floor of its own)."""
+    m = IdentityMap()
+    m.classes_ = np.array([0, 1])
+    m.n_classes_ = 2
+    m.n_score_columns_ = 1
+    m.boundary_ = None
+    m.floor_ = 0.0
+    return m
 
 
 def _uses_interval(self: CalibrationWrapper) -> bool:
@@ -66,7 +79,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         candidate whose fit reaches a boundary is not eligible, and with too few rows of a
         class to cross-validate ``"auto"`` warns and uses the most regularised map (Platt
         scaling for binary, temperature scaling for multiclass problems); see
-        ``method_notes_``.
+        ``method_notes_``. A candidate whose fit fails in a fold is left out with a warning,
+        its error in ``method_notes_``; a method the user named (or a map instance) whose fit
+        fails raises a ``ValueError`` naming the method and the reason.
     cv : int, splitter or iterable of (train, test) pairs, default=5
         Folds for cross-fitting (stratified and shuffled when an int). With a frozen estimator
         only ``"auto"`` uses it, to score the candidate maps.
@@ -104,7 +119,12 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
     estimator_ : classifier
         The fitted inner estimator used for prediction.
     calibrator_ : CalibrationMap or list of CalibrationMap
-        The fitted map (a list with one binary map per class for one-vs-rest).
+        The fitted map (a list with one binary map per class for one-vs-rest). A class with no
+        held-out rows gets no map of its own: with probability outputs its entry is an
+        :class:`~probwrap.calibration.IdentityMap` (it keeps the model's own probability, at
+        least ``clip_``, and the calibrated classes share the rest of each row in proportion to
+        their calibrated values); with decision values it is the map fitted on the pooled
+        one-vs-rest rows of the other classes. A warning names such classes.
     method_ : str
         Name of the map in use.
     method_scores_ : dict
@@ -202,7 +222,17 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         else:
             self.method_ = self.method
             template = CALIBRATION_METHODS[self.method]()
-        self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
+        if self.method == "auto":
+            self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
+        else:
+            # a method the user named that cannot be fitted raises, naming the method
+            try:
+                self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
+            except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
+                raise ValueError(
+                    f"CalibrationWrapper(method={plain(self.method_)!r}): the map could not be "
+                    f"fitted on the {len(ho.y_index)} held-out rows: {exc}"
+                ) from exc
         if self.method == "auto":
             hit = _boundary_of(self.calibrator_)
             if hit is not None and self.method_ in self.method_scores_:
@@ -291,9 +321,15 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             return DEFAULT_CLIP  # not used: decision values are not clipped
         v = values[w > 0] if values.shape[0] == w.shape[0] else values
         positive = v[v > 0]
-        if positive.size == 0:
+        return self._clip_from_smallest(float(positive.min()) if positive.size else np.inf)
+
+    @staticmethod
+    def _clip_from_smallest(smallest: float) -> float:
+        """Half the smallest non-zero probability, within ``[DEFAULT_CLIP, 0.25]`` (``inf``:
+        no non-zero probability, ``DEFAULT_CLIP``)."""
+        if not np.isfinite(smallest):
             return DEFAULT_CLIP
-        return float(min(max(0.5 * positive.min(), DEFAULT_CLIP), 0.25))
+        return float(min(max(0.5 * smallest, DEFAULT_CLIP), 0.25))
 
     def _clip_value(self) -> float:
         clip = getattr(self, "clip_", None)
@@ -352,29 +388,74 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             )
         if ovr is None:
             ovr = self._one_vs_rest_scores(scores)
-        maps = []
         n_classes = scores.shape[1]
-        for k in range(n_classes):
+        total = float(w.sum())
+        pos = np.bincount(np.asarray(y_index, dtype=np.intp), weights=w, minlength=n_classes)
+        fitted = (pos > 0) & (pos < total)
+        maps: list = [None] * n_classes
+        for k in np.flatnonzero(fitted):
             yk = (y_index == k).astype(int)
-            wk_pos = w[yk == 1].sum()
-            if wk_pos == 0 or wk_pos == w.sum():
-                # This class is absent from (or alone in) the held-out rows: no binary map can be
-                # fitted; its calibrated probability is its smoothed share there (rule of
-                # succession), 1 / (N + k) or (N + 1) / (N + k), never exactly 0 or 1.
-                total = float(w.sum())
-                maps.append(float((wk_pos + 1.0) / (total + n_classes)))
-                continue
-            maps.append(
-                clone(template).fit(self._map_input(template, ovr[:, k]), yk, sample_weight=w)
+            maps[k] = clone(template).fit(
+                self._map_input(template, ovr[:, k]), yk, sample_weight=w
             )
-        if any(isinstance(m, float) for m in maps):
-            warnings.warn(
-                "Some classes have no held-out rows; their calibrated probability is set to "
-                "1 / (N + k) (N the held-out weight, k the number of classes).",
-                UserWarning,
-                stacklevel=3,
-            )
+        if not fitted.all():
+            pooled = None
+            if self.response_ == "decision_function" and fitted.sum() >= 2:
+                cols = np.flatnonzero(fitted)
+                pooled = (
+                    ovr[:, cols].T.ravel(),
+                    np.concatenate([(y_index == k).astype(int) for k in cols]),
+                    np.tile(w, cols.shape[0]),
+                )
+            self._fill_absent_classes(template, maps, pos, total, pooled, stacklevel=4)
         return maps
+
+    def _fill_absent_classes(self, template, maps, pos, total, pooled, stacklevel) -> None:
+        """Entries of a one-vs-rest list for the classes that have no map (``None``).
+
+        A class absent from the held-out rows (or, when only one class is present, every class)
+        cannot get a binary map of its own. With probability outputs it keeps the model's own
+        probability: its entry is an :class:`~probwrap.calibration.IdentityMap`, and
+        :meth:`_apply_map` gives the class the model's probability (at least ``clip_``) and the
+        calibrated classes the rest of the row in proportion to their calibrated values. With
+        decision values there is no probability of the model's own; the class gets the map
+        fitted on the pooled one-vs-rest rows ``pooled = (scores, labels, weights)`` of the
+        classes that have rows, or, when there are none to pool, its smoothed share
+        ``(N_k + 1) / (N + k)`` (rule of succession) as a float.
+        """
+        n_classes = len(maps)
+        missing = [k for k, m in enumerate(maps) if m is None]
+        names = [plain(c) for c in np.asarray(self.classes_)[missing]]
+        if self.response_ != "decision_function":
+            for k in missing:
+                maps[k] = _kept_probability_map()
+            done = (
+                "they keep the model's own probability (at least clip_ = "
+                f"{self._clip_value():.3g}) and the calibrated classes share the rest of each "
+                "row in proportion to their calibrated one-vs-rest probabilities"
+            )
+        elif pooled is not None:
+            s, yk, wk = pooled
+            shared = clone(template).fit(self._map_input(template, s), yk, sample_weight=wk)
+            for k in missing:
+                maps[k] = shared
+            done = (
+                "their decision values are calibrated by one map fitted on the pooled "
+                "one-vs-rest rows of the classes that have rows"
+            )
+        else:
+            for k in missing:
+                maps[k] = float((pos[k] + 1.0) / (total + n_classes))
+            done = (
+                "with decision values and a single class present, each class gets its smoothed "
+                "share (N_k + 1) / (N + k) of the held-out rows (rule of succession)"
+            )
+        warnings.warn(
+            f"CalibrationWrapper: no one-vs-rest map can be fitted for class(es) {names}: "
+            f"they have no held-out rows (or are the only class present); {done}.",
+            UserWarning,
+            stacklevel=stacklevel,
+        )
 
     def _apply_map(self, calibrator, scores: np.ndarray, ovr=None) -> np.ndarray:
         if scores.ndim == 1:
@@ -384,13 +465,23 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             return calibrator.predict(self._map_input(calibrator, scores))
         if ovr is None:
             ovr = self._one_vs_rest_scores(scores)
+        kept = np.array([isinstance(m, IdentityMap) for m in calibrator])
         cols = [
             np.full(scores.shape[0], m)
             if isinstance(m, float)
-            else m.predict(self._map_input(m, ovr[:, k]))
+            else m.predict(ovr[:, k] if kept[k] else self._map_input(m, ovr[:, k]))
             for k, m in enumerate(calibrator)
         ]
         q = np.column_stack(cols)
+        if kept.any():
+            # classes without calibration rows keep the model's own probability; the
+            # calibrated classes share the rest in proportion to their calibrated values
+            rest = np.maximum(1.0 - q[:, kept].sum(axis=1, keepdims=True), 0.0)
+            if not kept.all():
+                part = q[:, ~kept]
+                q[:, ~kept] = part / part.sum(axis=1, keepdims=True) * rest
+            q = np.maximum(q, self._clip_value())
+            return q / q.sum(axis=1, keepdims=True)
         total = q.sum(axis=1, keepdims=True)
         uniform = np.full_like(q, 1.0 / q.shape[1])
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -436,5 +527,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         ovr = self._one_vs_rest_scores(scores)
         out = np.empty((scores.shape[0], scores.shape[1], 2))
         for k, m in enumerate(self.calibrator_):
-            out[:, k, :] = m if isinstance(m, float) else m.predict_interval(ovr[:, k])
+            if isinstance(m, IdentityMap):  # no rows: the model's own probability
+                out[:, k, :] = m.predict(ovr[:, k])[:, None]
+            else:
+                out[:, k, :] = m if isinstance(m, float) else m.predict_interval(ovr[:, k])
         return out

@@ -427,7 +427,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
             )
         if callable(self.costs):
             matrix = None
-            n_actions = first_block_row_costs(self, X, k).shape[2]
+            n_actions = first_block_row_costs(self, X, k, y, sample_weight).shape[2]
         else:
             matrix = zero_one_costs(k) if self.costs is None else check_cost_matrix(
                 self.costs, n_classes=k

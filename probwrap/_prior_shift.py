@@ -150,9 +150,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         unlabelled and the labelled rows (set by ``adapt``; see ``interval``).
     shift_pvalue_ : float
         p-value of the two-sample score test of "no shift" (the ``adapt`` rows against the
-        labelled rows; :func:`probwrap.shift.shift_score_test`).
+        labelled rows, whose class shares and calibration are themselves estimates; F
+        reference when the rows are few; :func:`probwrap.shift.shift_score_test`).
     shift_statistic_ : float
-        Its statistic (chi-square with ``n_classes - 1`` degrees of freedom under no shift).
+        Its statistic on the chi-square scale (chi-square with ``n_classes - 1`` degrees of
+        freedom under no shift, at any number of labelled rows: the chi-square quantile at
+        ``shift_pvalue_``).
     shift_detected_ : bool
         Whether ``adapt`` moved the prior at all (``adaptation_weight_ > 0``).
     adaptation_weight_ : float

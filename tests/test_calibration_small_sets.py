@@ -223,6 +223,39 @@ def test_failing_candidates_are_reported_and_a_named_failing_method_raises(cance
         CalibrationWrapper(FrozenEstimator(base), method=BinningMap(n_bins=0)).fit(X_cal, y_cal)
 
 
+class _NeedsManyRows(PlattMap):
+    """A map that cannot be fitted on fewer than 100 rows (a test double for a failing fit)."""
+
+    def _fit(self, scores, y, w):
+        if scores.shape[0] < 100:
+            raise np.linalg.LinAlgError(f"only {scores.shape[0]} rows; this map needs 100")
+        super()._fit(scores, y, w)
+
+
+def test_named_method_whose_fit_fails_raises_and_auto_leaves_it_out(cancer_142, monkeypatch):
+    from probwrap._calibration_auto import CALIBRATION_METHODS
+
+    base, X_cal, y_cal, _, _ = cancer_142
+    rows = np.r_[0:90]
+    with pytest.raises(ValueError, match=r"method='_NeedsManyRows'\): the map could not be "
+                       r"fitted on the 90 held-out rows: only 90 rows; this map needs 100"):
+        CalibrationWrapper(FrozenEstimator(base), method=_NeedsManyRows()).fit(
+            X_cal[rows], y_cal[rows]
+        )
+    monkeypatch.setitem(CALIBRATION_METHODS, "beta", _NeedsManyRows)
+    with pytest.raises(ValueError, match=r"method='beta'\): the map could not be fitted"):
+        CalibrationWrapper(FrozenEstimator(base), method="beta").fit(X_cal[rows], y_cal[rows])
+    # auto: the candidate fails in every fold (72 training rows); it is left out with a warning
+    # and its reason, and the other candidates are chosen from as usual
+    with pytest.warns(UserWarning, match=r"'beta' failed in fold 0: only 72 rows"):
+        model = CalibrationWrapper(
+            FrozenEstimator(base), candidates=["platt", "beta", "isotonic"], random_state=0
+        ).fit(X_cal[rows], y_cal[rows])
+    assert "beta" not in model.method_scores_
+    assert model.method_notes_["beta"] == "failed in fold 0: only 72 rows; this map needs 100"
+    assert model.method_ in ("platt", "isotonic")
+
+
 # --------------------------------------------------------------------------- weights
 def test_weight_scale_does_not_change_the_choice(wine_44):
     base, X_cal, y_cal, X_te, _ = wine_44
@@ -311,3 +344,78 @@ def test_auto_scores_a_sample_of_many_rows_and_fits_the_choice_on_all(monkeypatc
     # temperature scaling with its prior)
     expected = 1 / (2 * 2001) if model.method_ == "temperature" else 1 / 2002
     assert model.calibrator_.floor_ == pytest.approx(expected)
+
+
+# --------------------------------------------------------------------------- absent classes
+@pytest.fixture(scope="module")
+def digits_20():
+    """20 digits calibration rows for a random forest: classes 0, 2 and 4 have none."""
+    from sklearn.datasets import load_digits
+
+    X, y = load_digits(return_X_y=True)
+    idx = np.random.default_rng(0).permutation(len(y))
+    fit_rows, te, pool = idx[:600], idx[600:1198], idx[1198:]
+    forest = RandomForestClassifier(n_estimators=50, random_state=0).fit(X[fit_rows], y[fit_rows])
+    cal = np.random.default_rng(1).choice(pool, 20, replace=False)
+    return forest, X[cal], y[cal], X[te], y[te]
+
+
+@pytest.mark.parametrize("method", ["platt", "isotonic", "binning", "venn_abers"])
+def test_one_vs_rest_class_without_rows_keeps_the_models_probability(digits_20, method):
+    forest, X_cal, y_cal, X_te, y_te = digits_20
+    absent = np.flatnonzero(np.bincount(y_cal, minlength=10) == 0)
+    assert absent.tolist() == [0, 2, 4]
+    with pytest.warns(UserWarning, match=r"class\(es\) \[0, 2, 4\].*model's own probability"):
+        model = CalibrationWrapper(FrozenEstimator(forest), method=method).fit(X_cal, y_cal)
+    p = model.predict_proba(X_te)
+    own = forest.predict_proba(X_te)  # scikit-learn's forest: the probabilities to keep
+    rows = np.arange(len(y_te))
+    on_absent = np.isin(y_te, absent)
+    # Rows of an absent class cost what the forest's own probabilities cost: the floor clip_
+    # (1/100 for 50 trees) and the renormalisation after it move them by at most ~10 %
+    # (10 classes x 0.01); the previous 1/(N + k) = 1/30 cost 3.4 nats per row.
+    ours = -np.log(p[rows, y_te])[on_absent].mean()
+    theirs = -np.log(np.maximum(own[rows, y_te], 1e-15))[on_absent].mean()
+    assert ours <= theirs + 0.1
+    # the kept probability is the forest's own wherever no floor was applied in the row
+    clean = np.all(p > 2 * model.clip_, axis=1)
+    assert clean.sum() > 20
+    np.testing.assert_allclose(p[clean][:, absent], own[clean][:, absent], rtol=1e-9)
+    # the calibrated classes keep the ratios of their one-vs-rest maps' outputs
+    ovr = model._one_vs_rest_scores(model._to_scores(own))
+    q1 = model.calibrator_[1].predict(model._map_input(model.calibrator_[1], ovr[:, 1]))
+    q9 = model.calibrator_[9].predict(model._map_input(model.calibrator_[9], ovr[:, 9]))
+    np.testing.assert_allclose((p[clean, 1] / p[clean, 9]), (q1 / q9)[clean], rtol=1e-9)
+    assert p.min() > 0 and p.max() < 1
+    if method == "venn_abers":  # a kept class's interval is its one kept probability
+        iv = model.predict_proba_interval(X_te[:5])
+        np.testing.assert_allclose(iv[:, 0, 0], iv[:, 0, 1])
+
+
+def test_one_vs_rest_absent_class_with_decision_values_uses_the_pooled_map(digits_20):
+    from sklearn.svm import LinearSVC
+
+    forest, X_cal, y_cal, X_te, _ = digits_20
+    X, y = load_digits_xy()
+    svm = make_pipeline(StandardScaler(), LinearSVC(C=0.01)).fit(X[:600], y[:600])
+    with pytest.warns(UserWarning, match="pooled one-vs-rest rows"):
+        model = CalibrationWrapper(FrozenEstimator(svm), method="platt").fit(X_cal, y_cal)
+    assert model.response_ == "decision_function"
+    shared = model.calibrator_[0]
+    assert model.calibrator_[2] is shared and model.calibrator_[4] is shared
+    # consistency test: the same as a Platt map fitted on the stacked one-vs-rest rows
+    d = svm.decision_function(X_cal)
+    present = np.unique(y_cal)
+    ref = PlattMap().fit(
+        d[:, present].T.ravel(), np.concatenate([(y_cal == k).astype(int) for k in present])
+    )
+    assert shared.slope_ == pytest.approx(ref.slope_, rel=1e-9)
+    assert shared.intercept_ == pytest.approx(ref.intercept_, rel=1e-9, abs=1e-12)
+    p = model.predict_proba(X_te)
+    assert p.min() > 0 and p.max() < 1
+
+
+def load_digits_xy():
+    from sklearn.datasets import load_digits
+
+    return load_digits(return_X_y=True)

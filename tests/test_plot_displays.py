@@ -200,7 +200,8 @@ def test_prevalence_numbers_and_artists(parcels):
     src = parcels.source_prior
     back = winter.true_proba * (src / winter.prior)
     back /= back.sum(axis=1, keepdims=True)
-    disp = PrevalenceDriftDisplay.from_predictions(back, est, batch_size=400)
+    # alpha 0.05: 400-row batches, and the shift test carries the labelled rows' error too
+    disp = PrevalenceDriftDisplay.from_predictions(back, est, batch_size=400, alpha=0.05)
     ref = prior_by_batch(est, back, batch_size=400)
     np.testing.assert_allclose(disp.prevalence, ref["prior"][:, 1])
     np.testing.assert_allclose(disp.lower, ref["lower"][:, 1])

@@ -461,31 +461,65 @@ def test_iteration_cap_reports_the_distance():
 
 
 # -- reference checks of the new statistics ----------------------------------------------------
-def test_two_class_score_test_is_statsmodels_welch_z_squared():
-    # Reference: statsmodels CompareMeans(...).ztest_ind(usevar="unequal") on the per-row
-    # scores u = p1 / pi1 - p0 / pi0 of both samples (weights rescaled to Kish's count, which
-    # DescrStatsW reads as frequency weights).
+def test_two_class_score_test_is_statsmodels_welch_t_test():
+    # Reference: statsmodels CompareMeans(...).ttest_ind(usevar="unequal") (Welch 1947, with
+    # Satterthwaite's degrees of freedom) on the per-row scores u = p1 / pi1 - p0 / pi0 of both
+    # samples (weights rescaled to Kish's count, which DescrStatsW reads as frequency weights):
+    # for two classes the F approximation of shift_score_test is exactly Welch's t-test.
     ws_mod = pytest.importorskip("statsmodels.stats.weightstats")
+    from scipy.stats import chi2
+
     rng = np.random.default_rng(13)
-    p_s, _ = binary_gaussian(700, 0.4, rng, sep=1.0)
-    p_t, _ = binary_gaussian(500, 0.5, rng, sep=1.0)
-    src = np.array([0.55, 0.45])
-    w_s, w_t = rng.uniform(0.3, 2.0, 700), rng.uniform(0.3, 2.0, 500)
-    for weighted in (False, True):
-        a = shift_score_test(p_t, src, sample_weight=w_t if weighted else None,
-                             source_proba=p_s, source_sample_weight=w_s if weighted else None)
-        u_t = p_t[:, 1] / src[1] - p_t[:, 0] / src[0]
-        u_s = p_s[:, 1] / src[1] - p_s[:, 0] / src[0]
-        if weighted:
-            kt = w_t * w_t.sum() / np.dot(w_t, w_t)
-            ks = w_s * w_s.sum() / np.dot(w_s, w_s)
-        else:
-            kt, ks = np.ones(500), np.ones(700)
-        cm = ws_mod.CompareMeans(ws_mod.DescrStatsW(u_t, weights=kt),
-                                 ws_mod.DescrStatsW(u_s, weights=ks))
-        z, pval = cm.ztest_ind(usevar="unequal")
-        assert a.statistic == pytest.approx(z**2, rel=1e-10)
-        assert a.pvalue == pytest.approx(pval, rel=1e-8)
+    for n_s in (700, 25):  # many labelled rows, and few (where the t reference matters)
+        p_s, _ = binary_gaussian(n_s, 0.4, rng, sep=1.0)
+        p_t, _ = binary_gaussian(500, 0.5, rng, sep=1.0)
+        src = np.array([0.55, 0.45])
+        w_s, w_t = rng.uniform(0.3, 2.0, n_s), rng.uniform(0.3, 2.0, 500)
+        for weighted in (False, True):
+            a = shift_score_test(p_t, src, sample_weight=w_t if weighted else None,
+                                 source_proba=p_s,
+                                 source_sample_weight=w_s if weighted else None)
+            u_t = p_t[:, 1] / src[1] - p_t[:, 0] / src[0]
+            u_s = p_s[:, 1] / src[1] - p_s[:, 0] / src[0]
+            if weighted:
+                kt = w_t * w_t.sum() / np.dot(w_t, w_t)
+                ks = w_s * w_s.sum() / np.dot(w_s, w_s)
+            else:
+                kt, ks = np.ones(500), np.ones(n_s)
+            cm = ws_mod.CompareMeans(ws_mod.DescrStatsW(u_t, weights=kt),
+                                     ws_mod.DescrStatsW(u_s, weights=ks))
+            t, pval, dof = cm.ttest_ind(usevar="unequal")
+            assert a.raw_statistic == pytest.approx(t**2, rel=1e-10)
+            assert a.pvalue == pytest.approx(pval, rel=1e-8)
+            assert a.denominator_df == pytest.approx(dof, rel=1e-10)
+            # reported on the chi-square scale: the chi-square quantile at the same p-value
+            assert a.statistic == pytest.approx(chi2.isf(pval, 1), rel=1e-8)
+            assert a.statistic <= a.raw_statistic
+
+
+def test_multiclass_f_reference_holds_its_size_where_chi_square_does_not():
+    # The F approximation of the multivariate Behrens-Fisher problem (Krishnamoorthy & Yu 2004)
+    # checked by simulation: normal score vectors (p = 4) with unequal covariances, 30 labelled
+    # rows against 400 unlabelled. Under equal means the F reference rejects at about 5 %, the
+    # chi-square reference of the same statistic clearly more (a covariance estimated from 30
+    # rows has heavy tails). Tolerance: 600 draws, binomial sd of a 5 % rate 0.9 points; the
+    # F band is about 3 sd wide, and chi-square measures ~11 %.
+    from scipy.stats import chi2
+
+    from probwrap.shift._shift_tests import _mean_cov, _score_stat_moments, _source_moments
+
+    rng = np.random.default_rng(31)
+    scale_s = np.diag([1.0, 2.0, 0.5, 3.0])
+    f_rej = chi_rej = 0
+    for _ in range(600):
+        u_t = rng.normal(size=(400, 4))
+        u_s = rng.normal(size=(30, 4)) @ scale_s
+        res = _score_stat_moments(_mean_cov(u_t, np.ones(400)),
+                                  _source_moments(u_s, np.ones(30), None, np.full(5, 0.2)), 5)
+        f_rej += res.pvalue < 0.05
+        chi_rej += chi2.sf(res.raw, 4) < 0.05
+    assert 0.03 <= f_rej / 600 <= 0.075
+    assert chi_rej / 600 >= 0.085
 
 
 def test_score_test_rejects_at_about_its_nominal_rate_without_shift():
@@ -554,10 +588,11 @@ def test_default_interval_is_fast_enough_to_be_the_default():
     assert res.interval[1, 0] < 0.3 < res.interval[1, 1]
 
 
-def test_estimator_test_is_the_stratified_public_score_test():
+def test_estimator_test_is_the_plain_public_score_test():
     # Consistency test: PriorEstimator.estimate reports shift_score_test on the calibrated
-    # posteriors with the labelled rows' classes (stratified variance), which is never below
-    # the plain two-sample statistic's evidence (its variance is smaller).
+    # posteriors without the labelled rows' classes: the plain two-sample variance, which
+    # carries the error of the labelled class shares. The class-stratified variance (source_y)
+    # takes those shares as exact and so gives the larger statistic.
     rng = np.random.default_rng(18)
     p_src, y_src = binary_gaussian(900, 0.3, rng, sep=1.2)
     p_new, _ = binary_gaussian(700, 0.38, rng, sep=1.2)
@@ -566,8 +601,56 @@ def test_estimator_test_is_the_stratified_public_score_test():
     cal_s, cal_t = est.calibrate(p_src), est.calibrate(p_new)
     strat = shift_score_test(cal_t, est.source_prior_, source_proba=cal_s, source_y=y_src)
     plain = shift_score_test(cal_t, est.source_prior_, source_proba=cal_s)
-    assert res.shift_statistic == pytest.approx(strat.statistic, rel=1e-10)
+    assert res.shift_statistic == pytest.approx(plain.statistic, rel=1e-10)
+    assert res.shift_pvalue == pytest.approx(plain.pvalue, rel=1e-10)
     assert strat.statistic > plain.statistic
+    # the harm scale behind the evidence cutoff reads the same variance: both samples' mean
+    # scores, the labelled one unstratified
+    from probwrap.shift._shift_tests import _mean_cov, _score_rows, null_harm_scale
+
+    src = est.source_prior_
+    _, c_t, n_t = _mean_cov(_score_rows(cal_t, src), np.ones(700))
+    _, c_s, n_s = _mean_cov(_score_rows(cal_s, src), np.ones(900))
+    both = c_t / (n_t - 1) + c_s / (n_s - 1)
+    assert res.null_harm_scale == pytest.approx(
+        null_harm_scale(cal_t, np.ones(700), src, both), rel=1e-10)
+
+
+def test_few_labelled_rows_raise_no_false_alarm_on_bundled_digits():
+    # scikit-learn's bundled digits (10 classes), a logistic regression fitted on 600 rows and
+    # frozen, 60 labelled rows drawn at random, the unlabelled rows drawn from the same
+    # remaining rows: no shift. Taking the labelled class shares (6 rows a class) as exact, the
+    # test rejected in ~95 % of the draws (p = 6e-7 in the reported case) and adapt moved the
+    # predictions in nearly all; with their error in the test it rejects at about its level.
+    # Tolerance: 40 draws, binomial(40, 0.05) exceeds 7 rejections with probability 1e-3.
+    from sklearn.datasets import load_digits
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    X, y = load_digits(return_X_y=True)
+    rng = np.random.default_rng(0)
+    idx = rng.permutation(len(y))
+    model = make_pipeline(StandardScaler(), LogisticRegression(max_iter=300))
+    model = FrozenEstimator(model.fit(X[idx[:600]], y[idx[:600]]))
+    pool = idx[600:]
+    rejected, ratios = 0, []
+    for _ in range(40):
+        perm = rng.permutation(pool)
+        lab, new = perm[:60], perm[60:]
+        if np.unique(y[lab]).size < 10:
+            continue
+        wrapper = PriorShiftWrapper(model, n_resamples=0).fit(X[lab], y[lab])
+        before = wrapper.predict_proba(X[new])
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            wrapper.adapt(X[new])
+        after = wrapper.predict_proba(X[new])
+        rejected += wrapper.shift_pvalue_ < 0.05
+        rows = np.arange(new.size)
+        ratios.append(np.log(after[rows, y[new]]).mean() / np.log(before[rows, y[new]]).mean())
+    assert rejected <= 7
+    # and adapting costs nothing on average when nothing moved (the do-no-harm target: 2 %)
+    assert np.mean(ratios) <= 1.02
 
 
 def test_forest_with_exact_zero_one_on_bundled_wine_stays_inside():
@@ -592,3 +675,22 @@ def test_forest_with_exact_zero_one_on_bundled_wine_stays_inside():
     ll = -np.mean(np.log(p[np.arange(len(test)), y[test]]))
     ll_base = -np.mean(np.log(base[np.arange(len(test)), y[test]]))
     assert ll <= ll_base
+
+
+def test_score_test_reference_distribution_does_not_depend_on_the_weight_scale():
+    # The labelled rows' effective size (Kish) sets the F reference's degrees of freedom:
+    # weights scaled by 1e-3 or to sum 1 give the same statistic, p-value and degrees of
+    # freedom (rounding only: rtol 1e-9).
+    rng = np.random.default_rng(32)
+    p_s = rng.dirichlet([2.0, 1.0, 1.0], size=40)
+    p_t = rng.dirichlet([2.0, 1.0, 1.0], size=300)
+    w_s, w_t = rng.uniform(0.5, 2.0, 40), rng.uniform(0.5, 2.0, 300)
+    src = [0.5, 0.25, 0.25]
+    runs = [shift_score_test(p_t, src, sample_weight=w_t * c, source_proba=p_s,
+                             source_sample_weight=w_s * d)
+            for c, d in ((1.0, 1.0), (1e-3, 1e-3), (1 / w_t.sum(), 1 / w_s.sum()))]
+    assert np.isfinite(runs[0].denominator_df) and runs[0].denominator_df < 100
+    for r in runs[1:]:
+        assert r.pvalue == pytest.approx(runs[0].pvalue, rel=1e-9)
+        assert r.statistic == pytest.approx(runs[0].statistic, rel=1e-9)
+        assert r.denominator_df == pytest.approx(runs[0].denominator_df, rel=1e-9)

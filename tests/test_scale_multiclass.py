@@ -129,23 +129,30 @@ def test_multiclass_dask_temperature_with_weights_summing_to_one(client, model):
 
 
 def test_multiclass_dask_one_vs_rest_with_an_absent_class(client, model):
-    # class 2 has no held-out row: its probability is the rule of succession's 1 / (N + k),
-    # never exactly 0, and the same as in memory (consistency test)
+    # class 2 has no held-out row: it keeps the model's own probability (at least clip_), the
+    # other classes share the rest; the same as in memory (consistency test)
     from probwrap import CalibrationWrapper
+    from probwrap.calibration import IdentityMap
 
     X, y = _data(4000, 5, [0.5, 0.3, 0.2])
     keep = y != 2
     X, y = X[keep], y[keep]
     chunks = 1000
-    with pytest.warns(UserWarning, match="no held-out rows"):
+    with pytest.warns(UserWarning, match=r"class\(es\) \[2\].*model's own probability"):
         remote = CalibrationWrapper(model, method="platt").fit(
             da.from_array(X, chunks=(chunks, 2)), da.from_array(y, chunks=chunks)
         )
-    with pytest.warns(UserWarning, match="no held-out rows"):
+    with pytest.warns(UserWarning, match=r"class\(es\) \[2\].*model's own probability"):
         local = CalibrationWrapper(model, method="platt").fit(X, y)
-    assert remote.calibrator_[2] == pytest.approx(1 / (len(y) + 3), rel=1e-12)
-    assert local.calibrator_[2] == pytest.approx(remote.calibrator_[2], rel=1e-12)
+    assert isinstance(remote.calibrator_[2], IdentityMap)
+    assert isinstance(local.calibrator_[2], IdentityMap)
+    own = model.predict_proba(X)[:, 2]
     p = remote.predict_proba(X)
+    # the model's own probability, kept (above the clip, which the floor can only raise)
+    keep_rows = own > 10 * remote.clip_
+    np.testing.assert_allclose(p[keep_rows, 2], own[keep_rows], rtol=1e-9)
+    # 1e-6 absolute: the Dask Platt fits see score tallies of resolution 1e-3 in log-odds
+    np.testing.assert_allclose(p, local.predict_proba(X), atol=1e-6)
     assert p.min() > 0 and p.max() < 1
 
 
@@ -182,3 +189,46 @@ def test_multiclass_dask_uses_the_same_harm_cutoff_as_in_memory(client):
         da.from_array(X, chunks=(1000, 2)), da.from_array(y, chunks=1000)
     ).adapt(da.from_array(X_new, chunks=(1000, 2)))
     assert plain.evidence_cutoff_ == 1.0
+
+
+@pytest.mark.parametrize("n_classes", [2, 3])
+def test_few_labelled_rows_give_the_same_shift_test_on_dask(client, n_classes):
+    # Consistency test: with 60 labelled rows the shift test's F reference (few rows: heavy
+    # tails) is in play; the Dask fits (multiclass: reductions; binary: a tally of the scores)
+    # give the in-memory p-value and statistic. Binary tolerance: the tally bins the log-odds
+    # at width 1e-3, which moves the labelled rows' score moments by ~1e-4 relative.
+    prior = [0.5, 0.3, 0.2]
+    X, y = _data(60, 11, prior)
+    X_new, _ = _data(4000, 12, prior)
+    y = y if n_classes == 3 else np.minimum(y, 1)
+    est = model_for(n_classes)
+    remote = PriorShiftWrapper(est, n_resamples=0).fit(
+        da.from_array(X, chunks=(30, 2)), da.from_array(y, chunks=30)
+    ).adapt(da.from_array(X_new, chunks=(1000, 2)))
+    local = PriorShiftWrapper(est, n_resamples=0).fit(X, y).adapt(X_new)
+    tol = 1e-6 if n_classes == 3 else 2e-3
+    assert remote.shift_pvalue_ == pytest.approx(local.shift_pvalue_, rel=tol)
+    assert remote.shift_statistic_ == pytest.approx(local.shift_statistic_, rel=tol)
+    assert remote.evidence_cutoff_ == pytest.approx(local.evidence_cutoff_, rel=tol)
+    # and the F reference is what the test used: the p-value is above the chi-square one
+    from scipy.stats import chi2
+
+    from probwrap.shift._shift_tests import shift_score_test
+
+    p_s = local.prior_estimator_.calibrate(est.predict_proba(X))
+    p_t = local.prior_estimator_.calibrate(est.predict_proba(X_new))
+    ref = shift_score_test(p_t, local.source_prior_, source_proba=p_s)
+    assert local.shift_pvalue_ == pytest.approx(ref.pvalue, rel=1e-9)
+    assert np.isfinite(ref.denominator_df)
+    assert ref.pvalue > chi2.sf(ref.raw_statistic, n_classes - 1)
+
+
+_MODELS: dict = {}
+
+
+def model_for(n_classes):
+    if n_classes not in _MODELS:
+        X, y = _data(3000, 0, [0.5, 0.3, 0.2])
+        y = y if n_classes == 3 else np.minimum(y, 1)
+        _MODELS[n_classes] = FrozenEstimator(LogisticRegression(C=0.02).fit(X, y))
+    return _MODELS[n_classes]

@@ -143,6 +143,16 @@ def test_multiclass_scoring_monitoring_and_costs_of_x_on_spark(spark, digits):
     C = costs_of(X)
     act = np.argmin(np.einsum("nk,nka->na", model.predict_proba(X), C), axis=1)
     assert remote.heldout_cost_ == pytest.approx(C[np.arange(len(y)), y, act].mean(), rel=1e-12)
+    # a model fitted on arrays receives (like costs(X)) the array of every column not named
+    # as labels or weights
+    on_arrays = FrozenEstimator(LogisticRegression(C=1e-4, max_iter=1000).fit(X.to_numpy(), y))
+
+    def by_position(Xb):
+        return costs_of(pd.DataFrame(Xb, columns=X.columns))
+
+    remote_arr = CostPolicyWrapper(on_arrays, costs=by_position).fit(frame, "digit")
+    local_arr = CostPolicyWrapper(on_arrays, costs=by_position).fit(X.to_numpy(), y)
+    assert remote_arr.heldout_cost_ == pytest.approx(local_arr.heldout_cost_, rel=1e-12)
     got = add_predictions(remote, _frame(spark, X_test.assign(row=np.arange(len(X_test)))))
     got = got.toPandas().sort_values("row")
     np.testing.assert_array_equal(got["action"], local.predict(X_test))

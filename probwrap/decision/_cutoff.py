@@ -183,7 +183,8 @@ def _packed_order(
     v += 0.0  # -0.0 + 0.0 is 0.0; every other value is unchanged
     key = v.view(np.int64)
     del v
-    flip = key >> np.int64(63)  # -1 for negative scores, 0 otherwise
+    # (the labels' buffer, if given, is free until after the sort: no fresh temporary)
+    flip = np.right_shift(key, np.int64(63), out=label_out)  # -1 for negative scores, else 0
     flip &= _MAGNITUDE
     key ^= flip  # order-preserving: negatives become -(magnitude) - 1
     del flip

@@ -44,10 +44,11 @@ def add_predictions(model, frame, *, prefix: str = ""):
     Returns
     -------
     pyspark.sql.DataFrame
-        ``frame`` with ``probability`` (binary: of ``classes_[1]``; multiclass: an array in
-        ``classes_`` order; for a :class:`~probwrap.PriorShiftWrapper` calibrated but not
-        adjusted), ``adjusted_probability`` (prior-shift wrappers only) and ``action``
-        (``predict``).
+        ``frame`` with ``probability`` (binary: of ``classes_[1]``; multiclass: one double
+        column per class, ``probability_<class>``, in ``classes_`` order; for a
+        :class:`~probwrap.PriorShiftWrapper` calibrated but not adjusted),
+        ``adjusted_probability`` (``adjusted_probability_<class>``; prior-shift wrappers only)
+        and ``action`` (``predict``).
 
     Examples
     --------

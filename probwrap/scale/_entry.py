@@ -89,8 +89,8 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     return _multiclass_wrappers.fit_multiclass_calibration(owner, X, y, sample_weight, template)
 
 
-def first_block_row_costs(policy: Any, X: Any, k: int):
-    return _multiclass_wrappers.first_block_row_costs(policy, X, k)
+def first_block_row_costs(policy: Any, X: Any, k: int, y: Any = None, sample_weight: Any = None):
+    return _multiclass_wrappers.first_block_row_costs(policy, X, k, y, sample_weight)
 
 
 def heldout_cost_dask(policy: Any, X: Any, y: Any, sample_weight: Any) -> float:

@@ -131,6 +131,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     """
     from ..shift import PriorEstimator
     from ..shift._calibration import BiasCorrectedScaling, _floor, _newton, scale_penalty
+    from ..shift._shift_tests import _source_moments_from_sums
 
     estimator, classes = _frozen_multiclass(owner, y)
     k = classes.shape[0]
@@ -199,17 +200,10 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     est.soft_confusion_ = soft / total
     est._src = None
     est.n_source_effective_ = total**2 / squared_weight
-    # stratified mean and covariance of the mean, as probwrap.shift._shift_tests._source_moments
-    prior = class_weight / total
-    mean = np.zeros(k - 1)
-    cov = np.zeros((k - 1, k - 1))
-    for c in range(k):
-        m_c = su[c] / sw[c]
-        c_c = suu[c] / sw[c] - np.outer(m_c, m_c)
-        n_c = sw[c] ** 2 / sww[c]
-        mean = mean + prior[c] * m_c
-        cov = cov + prior[c] ** 2 * c_c / max(n_c - 1.0, 1.0)
-    est._source_score = (mean, cov)
+    # the labelled side of the two-sample shift test, as in memory: the plain mean of the
+    # scores and its variance (probwrap.shift._shift_tests._source_moments without classes)
+    est._source_score = _source_moments_from_sums(su.sum(axis=0), suu.sum(axis=0),
+                                                  float(sw.sum()), float(sww.sum()))
     owner.estimator_ = estimator
     owner.classes_ = classes
     if hasattr(estimator, "n_features_in_"):
@@ -304,18 +298,17 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             prior = point.prior
     finally:
         parts.release()
+    from ..shift._estimator import _current_source_score
     from ..shift._shift_tests import _null_harm_scale_moments, _score_stat_moments
 
     mean = su / total
     cov = suu / total - np.outer(mean, mean)
     source_score = getattr(est, "_source_score", None)
-    stat, pvalue = _score_stat_moments((mean, cov, n_eff), source_score, k)
+    test = _score_stat_moments((mean, cov, n_eff), _current_source_score(source_score), k)
+    stat, pvalue = test.statistic, test.pvalue
     # the same harm scale as in memory (for the max_harm cutoff): from the same sums
-    mean_cov = cov / max(n_eff - 1.0, 1.0)
-    if source_score is not None:
-        mean_cov = mean_cov + source_score[1]
     harm_scale = _null_harm_scale_moments(soft_mean / total, suu / total, entropy / total, src,
-                                          mean_cov)
+                                          test.mean_cov)
     return PriorEstimate(
         prior=prior,
         method=method,

@@ -45,6 +45,25 @@ def _wrapper_scores_block(owner, template, Xb, yb, wb):
     )
 
 
+class _Smallest:
+    """A block result whose "sum" (the reduction over blocks) is the smaller value."""
+
+    def __init__(self, value: float) -> None:
+        self.value = value
+
+    def __add__(self, other: _Smallest) -> _Smallest:
+        return _Smallest(min(self.value, other.value))
+
+
+def _smallest_positive_block(owner, Xb, yb, wb):
+    """Smallest non-zero probability of the rows of positive weight (inf when none)."""
+    values = np.asarray(getattr(owner.estimator_, owner.response_)(Xb), dtype=float)
+    w = _weights(wb, values.shape[0])
+    v = values[w > 0]
+    v = v[v > 0]
+    return _Smallest(float(v.min()) if v.size else np.inf)
+
+
 def _temperature_terms(block, log_beta, total, counts=None):
     from ..calibration._temperature import _loss_slope
 
@@ -110,6 +129,12 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     if hasattr(estimator, "feature_names_in_"):
         owner.feature_names_in_ = estimator.feature_names_in_
     rows = rows_of(X, y, sample_weight, estimator)
+    if owner.clip is None and owner.response_ == "predict_proba":
+        # clip_ from the data as in memory (CalibrationWrapper._choose_clip): one pass
+        smallest = rows.map_reduce(_smallest_positive_block, owner).value
+        owner.clip_ = owner._clip_from_smallest(smallest)
+    else:
+        owner.clip_ = owner._choose_clip(np.empty((0, k)), np.empty(0))
     if isinstance(template, TemperatureMap):
         parts = rows.persist(_wrapper_scores_block, owner, template)
         try:
@@ -189,28 +214,31 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     merged = rows.map_reduce(_ovr_tallies_block, owner, owner_resolution(owner))
     if merged[0].total_weight <= 0:
         raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
-    maps: list = []
-    for tally in merged:
-        pos = tally.label_weight[1]
-        if pos <= 0 or pos >= tally.total_weight:
-            # absent from (or alone in) the rows: its smoothed share, (N_k + 1) / (N + k) by the
-            # rule of succession with the weights on the row-count scale (as in memory: kept
-            # when they sum to at least the number of rows, else Kish's effective size), so
-            # never exactly 0 or 1
-            total = tally.total_weight
-            n_eff = total if total >= tally.n_rows else tally.effective_rows
-            if not np.isfinite(n_eff) or n_eff <= 0:
-                n_eff = float(tally.n_rows)
-            maps.append(float((pos * (n_eff / total) + 1.0) / (n_eff + k)))
-            continue
-        s, yk, wk = tally.to_rows()
-        maps.append(clone(template).fit(owner._map_input(template, s), yk, sample_weight=wk))
-    if any(isinstance(m, float) for m in maps):
-        warnings.warn(
-            "Some classes have no held-out rows; their calibrated probability is set to "
-            "1 / (N + k) (N the held-out weight, k the number of classes).",
-            UserWarning,
-            stacklevel=3,
+    total = merged[0].total_weight
+    pos = np.array([tally.label_weight[1] for tally in merged], dtype=float)
+    fitted = (pos > 0) & (pos < total)
+    maps: list = [None] * k
+    class_rows = {}
+    for j in np.flatnonzero(fitted):
+        class_rows[j] = merged[j].to_rows()
+        s, yk, wk = class_rows[j]
+        maps[j] = clone(template).fit(owner._map_input(template, s), yk, sample_weight=wk)
+    if not fitted.all():
+        # as in memory (CalibrationWrapper._fill_absent_classes): the model's own probability,
+        # a map on the pooled one-vs-rest rows (decision values), or with a single class
+        # present and decision values the smoothed share (N_k + 1) / (N + k), the weights on
+        # the row-count scale (kept when they sum to at least the number of rows, else Kish's
+        # effective size)
+        tally = merged[0]
+        n_eff = total if total >= tally.n_rows else tally.effective_rows
+        if not np.isfinite(n_eff) or n_eff <= 0:
+            n_eff = float(tally.n_rows)
+        pooled = None
+        if fitted.sum() >= 2:
+            parts = [class_rows[j] for j in np.flatnonzero(fitted)]
+            pooled = tuple(np.concatenate([part[i] for part in parts]) for i in range(3))
+        owner._fill_absent_classes(
+            template, maps, pos * (n_eff / total), n_eff, pooled, stacklevel=5
         )
     owner.tally_ = list(merged)
     return maps
@@ -230,12 +258,14 @@ def _cost_block(policy, Xb, yb, wb):
     return np.array([w @ realised, w.sum()])
 
 
-def first_block_row_costs(policy: Any, X: Any, k: int) -> np.ndarray:
+def first_block_row_costs(
+    policy: Any, X: Any, k: int, y: Any = None, sample_weight: Any = None
+) -> np.ndarray:
     """``costs(X)`` of the first Dask block or first Spark rows (validated), to learn the number
-    of actions."""
+    of actions. (``y`` and ``sample_weight`` tell Spark which columns are not features.)"""
     from ._rows import rows_of
 
-    return rows_of(X, None, None, policy.estimator).apply_first(policy._row_costs, k)
+    return rows_of(X, y, sample_weight, policy.estimator).apply_first(policy._row_costs, k)
 
 
 def heldout_cost_dask(policy: Any, X: Any, y: Any, sample_weight: Any) -> float:

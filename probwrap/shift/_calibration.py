@@ -41,8 +41,11 @@ def scale_penalty(theta: np.ndarray, n_scale: int, lam: float):
     with np.errstate(divide="ignore"):
         loss = float(lam * np.sum(a - np.log(a) - 1.0)) if np.all(a > 0) else np.inf
     safe = np.maximum(a, np.finfo(float).tiny)
-    grad[:n_scale] = lam * (1.0 - 1.0 / safe)
-    hess[np.arange(n_scale), np.arange(n_scale)] = lam / safe**2
+    # a trial step of the optimiser can reach a scale at (or below) 0, where the loss is
+    # infinite and the step is rejected; the curvature there is infinite too (not a warning)
+    with np.errstate(divide="ignore", over="ignore"):
+        grad[:n_scale] = lam * (1.0 - 1.0 / safe)
+        hess[np.arange(n_scale), np.arange(n_scale)] = lam / safe**2
     return loss, grad, hess
 
 

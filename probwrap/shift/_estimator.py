@@ -42,6 +42,15 @@ INTERVALS = ("score", "bca", "percentile")
 FEW_ROWS = 30
 
 
+def _current_source_score(source_score: Any) -> Any:
+    """The labelled side of the shift test, ``(mean, ((V, n), ...))``; an estimator pickled
+    before the variance components were kept holds ``(mean, covariance of the mean)`` (treated
+    as one component with many rows: the chi-square reference it was fitted with)."""
+    if source_score is None or isinstance(source_score[1], tuple):
+        return source_score
+    return source_score[0], ((source_score[1], float("inf")),)
+
+
 def _kish(w: np.ndarray) -> float:
     return float(w.sum() ** 2 / np.dot(w, w))
 
@@ -202,9 +211,11 @@ class PriorEstimator(_Resampling):
         self.n_source_effective_ = float(effective_rows) if effective_rows else _kish(w)
         summary = self._summarise(p, y_idx, w)
         self.calibrator_, self.source_prior_, self.confusion_, self.soft_confusion_ = summary
-        # mean and covariance of the labelled rows' scores, for the two-sample shift test
+        # mean of the labelled rows' scores and its variance, for the two-sample shift test:
+        # the plain (not class-stratified) mean, whose variance carries the error of the
+        # labelled class shares that source_prior_ and the calibration were fitted to
         self._source_score = _source_moments(
-            _score_rows(self.calibrate(p), self.source_prior_), w, self._src[1],
+            _score_rows(self.calibrate(p), self.source_prior_), w, None,
             self.source_prior_, effective_rows,
         )
         return self
@@ -371,11 +382,9 @@ class PriorEstimator(_Resampling):
             self._warn_boundary(ml, p, wk, n_eff)
         m_t, c_t, _ = _mean_cov(_score_rows(p, src), w)
         source_score = getattr(self, "_source_score", None)
-        stat, pvalue = _score_stat_moments((m_t, c_t, n_eff), source_score, k)
-        mean_cov = c_t / max(n_eff - 1.0, 1.0)
-        if source_score is not None:
-            mean_cov = mean_cov + source_score[1]
-        harm_scale = null_harm_scale(p, w, src, mean_cov)
+        test = _score_stat_moments((m_t, c_t, n_eff), _current_source_score(source_score), k)
+        stat, pvalue = test.statistic, test.pvalue
+        harm_scale = null_harm_scale(p, w, src, test.mean_cov)
         bounds, dropped = None, 0
         if self.n_resamples > 0 and interval:
             source = self._source_rows()

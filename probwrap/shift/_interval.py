@@ -166,7 +166,9 @@ def score_interval(
     the denominator; because the equality of means holds for every calibration map, the
     estimated calibration contributes only at second order. Test inversion stays honest at
     the edges, where the bootstrap of an estimate stuck at 0 degenerates. At
-    :math:`\pi = \pi^s` it is the statistic of :func:`shift_score_test`.
+    :math:`\pi = \pi^s` it is the raw statistic of :func:`shift_score_test` with ``source_y``
+    (the labelled class shares taken as exact, which is right here: the shares in the
+    statistic are the candidate prior, not an estimate).
 
     Parameters
     ----------

@@ -24,25 +24,40 @@ __all__ = [
 
 @dataclass(frozen=True)
 class ShiftTestResult:
-    """Result of :func:`shift_test`, in the style of SciPy's test results.
+    r"""Result of :func:`shift_test` and :func:`shift_score_test`, in the style of SciPy's results.
 
     Attributes
     ----------
     statistic : float
-        ``2 * (loglik(prior) - loglik(source_prior))``, non-negative.
+        Non-negative, on the chi-square scale with ``df`` degrees of freedom: for
+        :func:`shift_test` ``2 * (loglik(prior) - loglik(source_prior))``; for
+        :func:`shift_score_test` the chi-square quantile at the test's p-value (equal to
+        ``raw_statistic`` when ``denominator_df`` is infinite, smaller otherwise), so that a
+        rule reading the statistic as chi-square under no shift reads it correctly at any
+        sample size.
     pvalue : float
-        Upper tail of the chi-square distribution with ``df`` degrees of freedom.
+        Upper tail of the reference distribution (chi-square, or the F approximation of
+        :func:`shift_score_test` when the labelled rows are few).
     df : int
         ``k - 1``.
     prior : ndarray of shape (k,) or None
         The maximum-likelihood prior used in the statistic (None for the score test, which
         needs no estimate).
+    raw_statistic : float or None
+        :func:`shift_score_test`: the two-sample statistic
+        :math:`\Delta^\top (V_t + V_s)^{-1} \Delta` itself (None for :func:`shift_test`).
+    denominator_df : float
+        :func:`shift_score_test`: the second degrees of freedom of its F reference
+        distribution (infinite: chi-square).
     """
 
     statistic: float
     pvalue: float
     df: int
     prior: np.ndarray | None = None
+    raw_statistic: float | None = None
+    denominator_df: float = float("inf")
+
 
 def shift_test(
     proba: Any,
@@ -246,13 +261,32 @@ def shift_score_test(
     :math:`u_{nj} = p(j \mid x_n)/\pi^s_j - p(0 \mid x_n)/\pi^s_0` for
     :math:`j = 1..k-1`. Under no shift its mean over the unlabelled rows is zero (Rao's score
     test; Rao 1948). Given the labelled rows' posteriors ``source_proba``, the test compares
-    the mean score of the two samples instead — a two-sample comparison of means with separate
-    variances (Welch's form of the z-test; for two classes it equals statsmodels'
-    ``CompareMeans.ztest_ind(usevar="unequal")`` squared) — so the sampling error of the
-    labelled rows the posteriors were calibrated on is part of the test, not ignored. The
-    statistic :math:`\Delta^\top (\Sigma_t / (n_t - 1) + \Sigma_s / (n_s - 1))^{-1}
-    \Delta` is chi-square with ``k - 1`` degrees of freedom under no shift; ``n`` are Kish's
-    effective sample sizes, so the test does not depend on the scale of the weights.
+    the mean score of the two samples instead: "no shift" is then that the unlabelled rows come
+    from the population the labelled rows were drawn from, so the labelled rows' own sampling
+    error — the multinomial error of their class shares, which the posteriors and
+    ``source_prior`` were fitted to, and the error of a calibration fitted on them — is part of
+    the test. To first order both enter through the labelled rows' plain mean score (the
+    calibration's error moves both samples' means alike under no shift and cancels), so the
+    statistic is the two-sample comparison of means with separate variances,
+    :math:`T = \Delta^\top (V_t + V_s)^{-1} \Delta` with :math:`V = \Sigma / (n - 1)`
+    (``n`` Kish's effective sample sizes, so the test does not depend on the scale of the
+    weights). Few labelled rows make :math:`V_s` itself uncertain, and :math:`T` then has
+    heavier tails than chi-square: it is referred to the F approximation of the multivariate
+    Behrens-Fisher problem, :math:`T \sim \nu p / (\nu - p + 1)\, F_{p,\, \nu - p + 1}` with
+    :math:`p = k - 1` and
+
+    .. math::
+
+        \nu = \frac{p + p^2}{\sum_i \bigl(\operatorname{tr}[(V_i S^{-1})^2]
+              + \operatorname{tr}[V_i S^{-1}]^2\bigr) / (n_i - 1)}, \qquad S = \sum_i V_i
+
+    (the affine-invariant approximation of Krishnamoorthy & Yu 2004, written from memory with
+    :math:`n_i - 1`, so that for two classes it is exactly Welch's (1947) unequal-variance
+    t-test: ``statistic`` is then statsmodels' ``CompareMeans.ttest_ind(usevar="unequal")``
+    t-value squared, referred to the chi-square scale, and ``pvalue`` its p-value).
+    ``statistic`` is reported on the chi-square scale (the chi-square quantile at the
+    p-value), ``raw_statistic`` is :math:`T`. With many rows of both kinds
+    :math:`\nu` is large and the two coincide.
 
     Parameters
     ----------
@@ -262,16 +296,18 @@ def shift_score_test(
         Priors the posteriors were learned under.
     sample_weight : array-like of shape (n,), default=None
     source_proba : array-like of shape (m, k), default=None
-        Calibrated posteriors of the labelled rows (None: one-sample test, posteriors taken
-        as exact).
+        Calibrated posteriors of the labelled rows (None: one-sample test, posteriors and
+        ``source_prior`` taken as exact; chi-square reference).
     source_sample_weight : array-like of shape (m,), default=None
     source_y : array-like of shape (m,), default=None
-        Class indices of the labelled rows. When given (and ``source_prior`` is their weighted
-        class shares), the labelled mean is the class-stratified mean
-        :math:`\sum_c \pi^s_c \bar u_c` and its variance the stratified
-        :math:`\sum_c (\pi^s_c)^2 s^2_c / (n_c - 1)`: the class shares of the labelled rows
-        are the null hypothesis itself, so their sampling error does not enter (without
-        ``source_y`` the plain two-sample variance is used, which is larger).
+        Class indices of the labelled rows. When given, the labelled mean is the
+        class-stratified mean :math:`\sum_c \pi^s_c \bar u_c` with the stratified variance
+        :math:`\sum_c (\pi^s_c)^2 s^2_c / (n_c - 1)` (one variance component per class in
+        :math:`\nu`): this tests the unlabelled rows against *exactly* the priors
+        ``source_prior``, as when these are known from elsewhere and the labelled rows were
+        drawn by class. Labelled class shares that are themselves an estimate do not belong
+        here: the stratified variance leaves out their error and rejects far too often when the
+        labelled rows are few (``PriorShiftWrapper`` never passes ``source_y``).
 
     Returns
     -------
@@ -302,8 +338,9 @@ def shift_score_test(
             check_same_length(("source_proba", ps), ("source_y", source_y))
             ys, _ = check_labels(source_y, name="source_y", classes=np.arange(k), min_classes=1)
         source = _source_moments(_score_rows(ps, src), ws, ys, src)
-    stat, pvalue = _score_stat_moments((mean, cov, n), source, k)
-    return ShiftTestResult(statistic=stat, pvalue=pvalue, df=k - 1)
+    res = _score_stat_moments((mean, cov, n), source, k)
+    return ShiftTestResult(statistic=res.statistic, pvalue=res.pvalue, df=k - 1,
+                           raw_statistic=res.raw, denominator_df=res.denominator_df)
 
 
 def _source_moments(
@@ -312,21 +349,24 @@ def _source_moments(
     y: np.ndarray | None,
     prior: np.ndarray,
     n_eff: float | None = None,
-) -> tuple[np.ndarray, np.ndarray]:
-    """Mean of the labelled rows' scores and the covariance of that mean.
+) -> tuple[np.ndarray, tuple]:
+    """Mean of the labelled rows' scores and the variance components of that mean.
 
-    With class indices ``y`` the mean is stratified by class, ``sum_c prior_c mean_c``, with
-    covariance ``sum_c prior_c^2 cov_c / (n_c - 1)`` (``n_c`` Kish's count of class ``c``, or
-    ``n_eff`` times the class's weight share when ``n_eff`` overrides it); without, the plain
-    weighted mean with ``cov / (n - 1)``.
+    Returns ``(mean, ((V_1, n_1), ...))``: the covariance of the mean as a sum of independent
+    components ``V_i`` with their effective rows ``n_i`` (for the degrees of freedom of
+    :func:`_score_stat_moments`). Without ``y`` (what the wrapper uses): the plain weighted mean
+    with one component ``cov / (n - 1)``, ``n`` Kish's count or ``n_eff``. With class indices
+    ``y``: the class-stratified mean ``sum_c prior_c mean_c`` with one component
+    ``prior_c^2 cov_c / (n_c - 1)`` per class (``n_c`` Kish's count of class ``c``, or ``n_eff``
+    times the class's weight share).
     """
     if y is None:
         mean, cov, n = _mean_cov(u, w)
         n = float(n_eff) if n_eff else n
-        return mean, cov / max(n - 1.0, 1.0)
+        return mean, ((cov / max(n - 1.0, 1.0), n),)
     total = float(w.sum())
     mean = np.zeros(u.shape[1])
-    cov = np.zeros((u.shape[1], u.shape[1]))
+    parts = []
     for c in range(prior.shape[0]):
         rows = y == c
         wc = w[rows]
@@ -336,22 +376,67 @@ def _source_moments(
         if n_eff:
             n_c = float(n_eff) * float(wc.sum()) / total
         mean = mean + prior[c] * m_c
-        cov = cov + prior[c] ** 2 * c_c / max(n_c - 1.0, 1.0)
-    return mean, cov
+        parts.append((prior[c] ** 2 * c_c / max(n_c - 1.0, 1.0), n_c))
+    return mean, tuple(parts)
 
 
-def _score_stat_moments(target: tuple, source: tuple | None, k: int) -> tuple[float, float]:
+def _source_moments_from_sums(
+    sum_u: np.ndarray, sum_uu: np.ndarray, sum_w: float, sum_ww: float
+) -> tuple[np.ndarray, tuple]:
+    """:func:`_source_moments` (plain, no classes) from weighted sums over the labelled rows:
+    ``sum w u``, ``sum w u u^T``, ``sum w`` and ``sum w^2`` (so blocks on a cluster can be
+    summed first)."""
+    mean = np.asarray(sum_u, dtype=float) / sum_w
+    cov = np.atleast_2d(sum_uu) / sum_w - np.outer(mean, mean)
+    n = float(sum_w) ** 2 / float(sum_ww)
+    return mean, ((cov / max(n - 1.0, 1.0), n),)
+
+
+@dataclass(frozen=True)
+class _ScoreStat:
+    statistic: float  # on the chi-square scale with k - 1 degrees of freedom
+    pvalue: float
+    raw: float  # Delta' (V_t + V_s)^-1 Delta
+    denominator_df: float
+    mean_cov: np.ndarray  # V_t + V_s: covariance of the difference of the mean scores
+
+
+def _welch_df(parts: list, total: np.ndarray, p: int) -> float:
+    """``nu`` of the F approximation (see :func:`shift_score_test`) for independent variance
+    components ``(V_i, n_i)`` summing to ``total``."""
+    inv = np.linalg.pinv(total)
+    den = 0.0
+    for v, n in parts:
+        a = np.atleast_2d(v) @ inv
+        den += (float(np.trace(a @ a)) + float(np.trace(a)) ** 2) / max(float(n) - 1.0, 1.0)
+    return float(p + p * p) / den if den > 0 else float("inf")
+
+
+def _score_stat_moments(target: tuple, source: tuple | None, k: int) -> _ScoreStat:
     """Score statistic from the target's (mean, covariance, effective rows) of the per-row
-    scores and the labelled rows' (mean, covariance of the mean)."""
+    scores and the labelled rows' (mean, variance components) of :func:`_source_moments`."""
+    from scipy.stats import f as f_dist
+
     mean, cov, n = target
-    total = cov / max(n - 1.0, 1.0)
+    p = k - 1
+    parts = [(np.atleast_2d(cov) / max(n - 1.0, 1.0), n)]
     if source is not None:
-        m_s, c_s = source
+        m_s, source_parts = source
         mean = mean - m_s
-        total = total + c_s
-    stat = float(mean @ np.linalg.pinv(total) @ mean) if np.any(total) else 0.0
-    stat = max(stat, 0.0)
-    return stat, float(chi2.sf(stat, k - 1))
+        parts.extend(source_parts)
+    total = sum(np.atleast_2d(v) for v, _ in parts)
+    raw = float(mean @ np.linalg.pinv(total) @ mean) if np.any(total) else 0.0
+    raw = max(raw, 0.0)
+    nu = _welch_df(parts, total, p) if np.any(total) else float("inf")
+    ddf = max(nu - p + 1.0, 1.0)
+    if not np.isfinite(ddf) or ddf > 1e7:  # the F reference is chi-square to 7 digits
+        pvalue = float(chi2.sf(raw, p))
+        return _ScoreStat(raw, pvalue, raw, float("inf"), total)
+    pvalue = float(f_dist.sf(raw * ddf / (p * (ddf + p - 1.0)), p, ddf))
+    # the chi-square quantile at the same p-value; beyond floating point's smallest p-values
+    # the raw statistic (larger still) stands in
+    stat = float(chi2.isf(pvalue, p)) if pvalue > 1e-300 else raw
+    return _ScoreStat(min(stat, raw), pvalue, raw, ddf, total)
 
 
 # -- confusion-matrix estimators ---------------------------------------------------------------
