@@ -371,11 +371,233 @@ def sweep_array_core(p, y, k, where, rng):
             note(comp, "wscale", where, f"{offs}")
 
 
+# --------------------------------------------------------------------------- cost rules
+# Realised test cost of CostPolicyWrapper's tuned cutoff, fitted on a small held-out set, beside
+# scikit-learn's TunedThresholdClassifierCV (cv="prefit", the same cost as scoring, the same
+# rows), the plug-in Bayes cutoff c_fp / (c_fp + c_fn) on the model's own probabilities
+# (Elkan 2001) and the cutoff 0.5.
+COST_FN = (3.0, 10.0)  # cost of a false negative; a false positive costs 1
+COST_SIZES = (40, 100, 300)
+COST_MINE = ("settled", "least_cost")
+
+
+def _cost_binary_sets(quick: bool):
+    """Binary tasks; the positive class is the minority."""
+    X, y = load_breast_cancer(return_X_y=True)
+    yield "breast_cancer", X, (y == 0).astype(int)
+    X, y = load_wine(return_X_y=True)
+    yield "wine 1 vs rest", X, (y == 1).astype(int)
+    X, y = load_iris(return_X_y=True)
+    yield "iris virginica", X, (y == 2).astype(int)
+    if quick:
+        return
+    X, y = load_digits(return_X_y=True)
+    yield "digits 8 vs rest", X, (y == 8).astype(int)
+    import statsmodels.api as sm
+
+    d = sm.datasets.star98.load_pandas().data
+    share = d["NABOVE"] / (d["NABOVE"] + d["NBELOW"])
+    yield ("star98 top third", d.drop(columns=["NABOVE", "NBELOW"]).to_numpy(float),
+           (share > share.quantile(2 / 3)).to_numpy(int))
+    d = sm.datasets.anes96.load_pandas().data
+    yield "anes96 vote", d.drop(columns="vote").to_numpy(float), d["vote"].to_numpy(int)
+    d = sm.datasets.fair.load_pandas().data
+    yield "fair any affair", d.drop(columns="affairs").to_numpy(float), (
+        d["affairs"] > 0).to_numpy(int)
+
+
+def _cost_models(quick: bool, seed: int):
+    from sklearn.ensemble import HistGradientBoostingClassifier
+    from sklearn.linear_model import LogisticRegression
+
+    yield "naive_bayes", GaussianNB()
+    yield "forest", RandomForestClassifier(n_estimators=100, random_state=seed)
+    if quick:
+        return
+    yield "logistic", make_pipeline(StandardScaler(), LogisticRegression(max_iter=5000))
+    yield "svm_margins", make_pipeline(StandardScaler(), LinearSVC())
+    yield "boosting", HistGradientBoostingClassifier(max_iter=100, random_state=seed)
+
+
+def _realised(y, act, c_fn) -> float:
+    """Mean cost per row: a false positive costs 1, a false negative c_fn."""
+    act = np.asarray(act).astype(int)
+    return float(np.mean((act == 1) & (y == 0)) + c_fn * np.mean((act == 0) & (y == 1)))
+
+
+def cost_sweep(quick: bool, seeds) -> dict:
+    from sklearn.metrics import make_scorer
+    from sklearn.model_selection import TunedThresholdClassifierCV
+
+    rules = ["settled", "least_cost", "sklearn_tuned", "plugin", "half"]
+    cells: dict = collections.defaultdict(lambda: collections.defaultdict(list))
+    for dname, X, y in _cost_binary_sets(quick):
+        X = np.asarray(X, float)
+        for seed in seeds:
+            rng = np.random.default_rng(100 + seed)
+            idx = rng.permutation(len(y))
+            n_fit = min(len(idx) // 3, 600)
+            fit_rows, rest = idx[:n_fit], idx[n_fit:]
+            for mname, model in _cost_models(quick, seed):
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore")
+                    model.fit(X[fit_rows], y[fit_rows])
+                margins = not hasattr(model, "predict_proba")
+                for n in COST_SIZES:
+                    if len(rest) - n < 100:
+                        continue
+                    held = rng.choice(len(rest), n, replace=False)
+                    h_rows = rest[held]
+                    t_rows = np.delete(rest, held)
+                    Xh, yh, Xt, yt = X[h_rows], y[h_rows], X[t_rows], y[t_rows]
+                    if np.bincount(yh, minlength=2).min() < 3:
+                        continue  # too few of a class to tune anything on
+                    for c_fn in COST_FN:
+                        costs = {"fp": 1.0, "fn": c_fn}
+                        inner = FrozenEstimator(model)
+                        if margins:  # probabilities from a Platt map on the held-out rows
+                            inner = CalibrationWrapper(inner, method="platt")
+                        out = {}
+                        with warnings.catch_warnings():
+                            warnings.simplefilter("ignore")
+                            cp = CostPolicyWrapper(inner, costs=costs, strategy="tuned",
+                                                   random_state=seed).fit(Xh, yh)
+                            out["settled"] = _realised(yt, cp.predict(Xt), c_fn)
+                            # the plain least-cost cutoff (what "tuned" did before settling)
+                            pt = cp.estimator_.predict_proba(Xt)[:, 1]
+                            out["least_cost"] = _realised(yt, pt > cp.cost_curve_.cutoff, c_fn)
+                            scorer = make_scorer(
+                                lambda yy, pp, c=c_fn: -_realised(np.asarray(yy), pp, c))
+                            sk = TunedThresholdClassifierCV(
+                                model, scoring=scorer, cv="prefit", refit=False).fit(Xh, yh)
+                            out["sklearn_tuned"] = _realised(yt, sk.predict(Xt), c_fn)
+                            if margins:
+                                pm = CostPolicyWrapper(inner, costs=costs).fit(Xh, yh)
+                                out["plugin"] = _realised(yt, pm.predict(Xt), c_fn)
+                                out["half"] = _realised(yt, model.decision_function(Xt) > 0, c_fn)
+                            else:
+                                pt = model.predict_proba(Xt)[:, 1]
+                                out["plugin"] = _realised(yt, pt > 1 / (1 + c_fn), c_fn)
+                                out["half"] = _realised(yt, pt > 0.5, c_fn)
+                        key = (dname, mname, n, c_fn)
+                        for r in rules:
+                            cells[key][r].append(out[r])
+            print(f"cost: {dname} seed {seed} done", flush=True)
+    # ratios of the mean test cost over the seeds, per cell
+    print("\nRealised test cost of a rule fitted on n held-out rows over that of another\n"
+          "(geometric mean over cells | worst cell); sklearn_tuned: scikit-learn's "
+          "TunedThresholdClassifierCV\n(cv='prefit', the cost as scoring), plugin: "
+          "c_fp / (c_fp + c_fn) on the model's probabilities")
+    summary_rows = {}
+    for mine in COST_MINE:
+        print(f" {mine}")
+        for n in COST_SIZES + ("all",):
+            keys = [k for k in cells if n == "all" or k[2] == n]
+            if not keys:
+                continue
+            line = f"  n={n!s:>4} ({len(keys):3d} cells)"
+            for other in [r for r in rules if r not in COST_MINE]:
+                r = np.array([np.mean(cells[k][mine]) / max(np.mean(cells[k][other]), 1e-9)
+                              for k in keys])
+                worst = keys[int(np.argmax(r))]
+                gm = float(np.exp(np.mean(np.log(np.maximum(r, 1e-9)))))
+                summary_rows[(mine, n, other)] = (gm, float(r.max()), worst)
+                line += f"   vs {other}: {gm:5.3f} | {r.max():5.2f}"
+            print(line)
+        for other in [r for r in rules if r not in COST_MINE]:
+            gm, worst, key = summary_rows[(mine, "all", other)]
+            print(f"  worst vs {other}: {key} {worst:.2f}")
+    return summary_rows
+
+
+def _cost_multiclass_sets(quick: bool):
+    X, y = load_iris(return_X_y=True)
+    yield "iris", X, y
+    X, y = load_wine(return_X_y=True)
+    yield "wine", X, y
+    if quick:
+        return
+    X, y = load_digits(return_X_y=True)
+    yield "digits", X, y
+    import statsmodels.api as sm
+
+    d = sm.datasets.anes96.load_pandas().data
+    yield "anes96 PID", d.drop(columns=["PID", "vote"]).to_numpy(float), d["PID"].to_numpy(int)
+
+
+def cost_sweep_multiclass(quick: bool, seeds) -> None:
+    """Tuned class offsets (settled toward zero) against the Bayes rule and the argmax.
+
+    Errors on true class j cost j + 1. ``tuned`` is CostPolicyWrapper(strategy="tuned") as
+    fitted today; ``plain_tuned`` the offsets of tune_class_offsets before settling (models
+    with predict_proba only)."""
+    from probwrap.decision import tune_class_offsets
+
+    cells: dict = collections.defaultdict(lambda: collections.defaultdict(list))
+    for dname, X, y in _cost_multiclass_sets(quick):
+        X = np.asarray(X, float)
+        classes, y = np.unique(y, return_inverse=True)
+        k = len(classes)
+        C = (1 - np.eye(k)) * (1 + np.arange(k))[:, None]
+        for seed in seeds:
+            rng = np.random.default_rng(seed)
+            idx = rng.permutation(len(y))
+            n_fit = min(len(y) // 3, 600)
+            fit, rest = idx[:n_fit], idx[n_fit:]
+            for mname, model in _cost_models(quick, seed):
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore")
+                    model.fit(X[fit], y[fit])
+                inner = FrozenEstimator(model)
+                proba = hasattr(model, "predict_proba")
+                if not proba:
+                    inner = CalibrationWrapper(inner, method="temperature")
+                for n in COST_SIZES:
+                    if len(rest) - n < 60:
+                        continue
+                    h = rest[rng.choice(len(rest), n, replace=False)]
+                    t = np.setdiff1d(rest, h)
+                    if len(np.unique(y[h])) < k:
+                        continue
+                    out = {}
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("ignore")
+                        for strat in ("tuned", "bayes"):
+                            cp = CostPolicyWrapper(inner, costs=C, strategy=strat).fit(X[h], y[h])
+                            out[strat] = C[y[t], cp.predict(X[t])].mean()
+                        out["argmax"] = C[y[t], model.predict(X[t])].mean()
+                        if proba:
+                            b = tune_class_offsets(model.predict_proba(X[h]), y[h], C).offsets
+                            q = model.predict_proba(X[t]) * np.exp(b)
+                            out["plain_tuned"] = C[y[t], np.argmin(q @ C, axis=1)].mean()
+                    for r, v in out.items():
+                        cells[(dname, mname, n)][r].append(v)
+            print(f"cost (multiclass): {dname} seed {seed} done", flush=True)
+    print("\nMulticlass, errors on class j cost j + 1: test cost of tuned class offsets over "
+          "that of the Bayes rule\nand of the argmax (geometric mean | worst cell)")
+    for mine in ("tuned", "plain_tuned"):
+        for n in COST_SIZES:
+            keys = [c for c in cells if c[2] == n and mine in cells[c]]
+            if not keys:
+                continue
+            line = f"  {mine:11} n={n:4d} ({len(keys):3d} cells)"
+            for other in ("bayes", "argmax"):
+                r = np.array([np.mean(cells[c][mine]) / max(np.mean(cells[c][other]), 1e-9)
+                              for c in keys])
+                gm = float(np.exp(np.mean(np.log(np.maximum(r, 1e-9)))))
+                line += f"   vs {other}: {gm:5.3f} | {r.max():5.2f}"
+            print(line)
+
+
 # --------------------------------------------------------------------------- main
 def main(argv: list[str]) -> None:
     quick = "--quick" in argv
     n_seeds = int(argv[argv.index("--seeds") + 1]) if "--seeds" in argv else (1 if quick else 3)
     seeds = range(n_seeds)
+    if "--only" in argv and argv[argv.index("--only") + 1] == "cost":
+        cost_sweep(quick, seeds)
+        cost_sweep_multiclass(quick, seeds)
+        return
     n_draws = 0
     for dname, X, y in data_sets(quick):
         X = np.asarray(X, float)

@@ -68,8 +68,10 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         when ``p > (c_fp - c_tn) / ((c_fp - c_tn) + (c_fn - c_tp))``, Elkan 2001).
         ``"tuned"``: binary with constant costs, the cutoff on ``p`` with the least cost on the
         out-of-fold predictions of all folds pooled (an exact search over every distinct held-out
-        probability); otherwise per-class offsets on the log-probability scale fitted the same
-        way. ``"fixed"``: use ``cutoff`` as given, so that a search can tune it.
+        probability), settled toward the plug-in cutoff where the held-out rows do not show it
+        costs more (:func:`probwrap.decision.settle_cutoff`; the plain minimiser is
+        ``cost_curve_.cutoff``); otherwise per-class offsets on the log-probability scale fitted
+        the same way. ``"fixed"``: use ``cutoff`` as given, so that a search can tune it.
     cutoff : float or array-like of shape (n_classes,), default=None
         With ``strategy="fixed"``: the probability cutoff (binary: the second action is taken when
         ``p > cutoff``), or, for more classes, actions or per-row costs, per-class offsets on the

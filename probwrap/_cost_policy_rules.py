@@ -26,6 +26,8 @@ from .decision import (
     guaranteed_class_offsets,
     guaranteed_cutoff,
     plugin_cutoff,
+    settle_class_offsets,
+    settle_cutoff,
     tune_class_offsets,
 )
 from .decision._cutoff import _search_cutoff
@@ -130,7 +132,8 @@ class _RuleFitting:
                 p, ho.y_index, matrix, ho.sample_weight, share, (0.0, 1.0),
                 max_points=None if keep else CURVE_POINTS,
             )
-            self.cutoff_ = res.cutoff
+            self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res,
+                                         sample_weight=ho.sample_weight).cutoff
             self.cost_curve_ = res
             del res
             if keep:
@@ -189,7 +192,8 @@ class _RuleFitting:
             offsets = g.offsets
         elif self.strategy == "tuned" and self.costs is not None:
             res = tune_class_offsets(proba, ho.y_index, costs, sample_weight=ho.sample_weight)
-            offsets = res.offsets
+            offsets = settle_class_offsets(proba, ho.y_index, costs, res.offsets,
+                                           sample_weight=ho.sample_weight).offsets
         else:
             offsets = np.zeros(k)
         self.class_offsets_ = offsets

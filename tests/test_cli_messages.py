@@ -352,3 +352,40 @@ def test_progress_on_a_terminal_counts_steps_to_the_end(monkeypatch, capsys):
     err = capsys.readouterr().err
     assert "demo: two" in err and "1/3 steps" in err and "3/3 steps" in err
     assert "<" not in err.split("3/3 steps")[0].rsplit("\r", 1)[-1]  # no ETA shown
+
+
+def test_semicolon_tab_and_decimal_comma_files_read_like_the_comma_file(files, tmp_path, capsys):
+    # Spreadsheets in many European locales save ';'-separated files with decimal commas; the
+    # first attempt at such a file used to stop with "no column 'risk'; the file has columns
+    # 'risk;damaged'". Each variant must give the comma file's numbers exactly.
+    held = pd.read_csv(files / "held.csv")
+    args = ["--score-column", "risk", "--label-column", "damaged", "--cost-fp", 3,
+            "--cost-fn", 40, "--resamples", 0, "--format", "json"]
+    code, ref, err = run(capsys, "cutoff", "--scores", files / "held.csv", *args)
+    assert code == 0, err
+    variants = {
+        "semi.csv": dict(sep=";"),
+        "semi_comma.csv": dict(sep=";", decimal=","),
+        "tab.tsv": dict(sep="\t"),
+        "bom.csv": dict(encoding="utf-8-sig"),
+    }
+    for name, how in variants.items():
+        held.to_csv(tmp_path / name, index=False, float_format="%.17g", **how)
+        code, out, err = run(capsys, "cutoff", "--scores", tmp_path / name, *args)
+        assert code == 0, (name, err)
+        got, want = json.loads(out), json.loads(ref)
+        assert got["cutoff"] == want["cutoff"] and got["n_positive"] == want["n_positive"], name
+
+
+def test_auto_candidates_print_the_standard_error_of_the_difference(files, tmp_path, capsys):
+    # The standard error in method_scores_ is that of a candidate's difference from the lowest
+    # log loss; it used to print as "(+- 0.00000)" beside the lowest, read as "no uncertainty".
+    code, out, err = run(capsys, "calibrate", "fit", "--scores", files / "held.csv",
+                         "--score-column", "risk", "--label-column", "damaged", "--method",
+                         "auto", "--out", tmp_path / "auto.json")
+    assert code == 0, err
+    assert "+-" not in out
+    assert "standard error of the difference from the lowest" in out
+    saved = json.loads((tmp_path / "auto.json").read_text())["metadata"]["auto_log_loss"]
+    lowest = min(saved, key=lambda m: saved[m]["log_loss"])
+    assert re.search(rf"^  {lowest}\s+\S+\s+\(lowest\)", out, flags=re.M)

@@ -151,6 +151,10 @@ def test_cutoff_equals_the_library(files, capsys, capacity):
     realised = np.where(act, np.where(y == 1, 0.0, 3.0), np.where(y == 1, 40.0, 0.0)).mean()
     assert got["expected_cost"] == pytest.approx(realised, rel=1e-12)
     assert got["bayes_cutoff"] == pytest.approx(3 / 43)
+    # the cutoff CostPolicyWrapper(strategy="tuned") keeps on the same rows
+    from probwrap.decision import settle_cutoff
+
+    assert got["settled_cutoff"]["cutoff"] == settle_cutoff(p, y, COSTS, res).cutoff
 
 
 def test_cutoff_text_output(files, capsys):

@@ -152,7 +152,8 @@ def test_cost_curve_from_fitted_policy(parcels):
     ).fit(parcels.data, parcels.target)
     disp = CostCurveDisplay.from_estimator(policy)
     assert disp.result is policy.cost_curve_
-    assert disp.cutoff == policy.cutoff_
+    assert disp.cutoff == policy.cost_curve_.cutoff
+    assert disp.settled_cutoff == policy.cutoff_
     assert disp.interval.low == policy.cutoff_interval_.low
     np.testing.assert_array_equal(disp.line_.get_ydata(), policy.cost_curve_.costs)
     # with rows: evaluated on them with the wrapper's costs

@@ -184,10 +184,15 @@ def _fit(args: argparse.Namespace) -> int:
     )
     if late is not None:
         print("  " + late_label_line(late))
-    if args.method == "auto":
+    if args.method == "auto" and wrapper.method_scores_:
+        # the standard error is that of each candidate's difference from the best one (so the
+        # best one has none): printing it as "+-" read as the uncertainty of the loss itself
+        print("  candidate   cross-validated log loss   (standard error of the difference "
+              "from the lowest)")
         for name, (loss, se) in sorted(wrapper.method_scores_.items(), key=lambda kv: kv[1][0]):
             mark = "  <- chosen" if name == wrapper.method_ else ""
-            print(f"  {name:<11} cross-validated log loss {loss:.5f} (+- {se:.5f}){mark}")
+            gap = "lowest" if se == 0.0 else f"{se:.5f}"
+            print(f"  {name:<11} {loss:.5f}   ({gap}){mark}")
     return 0
 
 

@@ -166,6 +166,16 @@ def cutoff_summary(
             share = mean(action)
             over = capacity is not None and share > capacity
             out[name] = None if over else mean(matrix[y, action])
+        out["settled_cutoff"] = None
+        if bayes is not None:
+            from probwrap.decision import settle_cutoff
+
+            settled = settle_cutoff(scores, y, matrix, res, sample_weight=sample_weight)
+            out["settled_cutoff"] = {
+                "cutoff": settled.cutoff,
+                "expected_cost": mean(matrix[y, (scores > settled.cutoff).astype(np.intp)]),
+                "is_bayes_cutoff": settled.kept_plugin,
+            }
     if guarantee is not None:
         from probwrap.decision import guaranteed_cutoff
 
@@ -231,6 +241,15 @@ def _text(out: dict[str, Any], path: str) -> str:
             lines.append(
                 f"  at Bayes cutoff {bayes:.4g}  {cost(out['cost_at_bayes_cutoff'])}   "
                 "(right for calibrated probabilities)"
+            )
+        kept = out.get("settled_cutoff")
+        if kept is not None:
+            why = ("the Bayes cutoff: these rows do not show at 5 % that another costs less"
+                   if kept["is_bayes_cutoff"] else
+                   "nearest the Bayes cutoff among those not shown at 5 % to cost more")
+            lines.append(
+                f"  kept by CostPolicyWrapper {kept['cutoff']:.6g}   cost {kept['expected_cost']:.6g}"
+                f"   ({why})"
             )
     return "\n".join(lines)
 

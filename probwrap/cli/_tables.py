@@ -7,6 +7,7 @@ row.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
@@ -37,7 +38,12 @@ def read_table(path: str | Path, *, exact: Iterable[str] = ()) -> Any:
         if table_kind(path) == "Parquet":
             frame = pd.read_parquet(path)
         else:
-            frame = pd.read_csv(path, dtype=dict.fromkeys(exact, str))
+            exact = list(exact)
+            sep, decimal = _csv_dialect(path)
+            frame = pd.read_csv(path, dtype=dict.fromkeys(exact, str), sep=sep, decimal=decimal)
+            if decimal == ",":  # columns read as text keep their decimal commas: make them dots
+                for column in set(exact) & set(frame.columns):
+                    frame[column] = frame[column].str.replace(",", ".", regex=False)
     except pd.errors.EmptyDataError:
         raise DataError(f"{path}: the file is empty") from None
     except (MemoryError, KeyboardInterrupt):
@@ -47,6 +53,33 @@ def read_table(path: str | Path, *, exact: Iterable[str] = ()) -> Any:
     if frame.shape[0] == 0:
         raise DataError(f"{path}: the file has a header but no rows")
     return frame
+
+
+_DECIMAL_COMMA = re.compile(r"(^|;)\s*-?\d+,\d+\s*(;|$)")
+
+
+def _csv_dialect(path: Path) -> tuple[str, str]:
+    """Separator and decimal mark of a CSV file, from its first lines.
+
+    Comma-separated unless the header has no comma but a semicolon or a tab (spreadsheets in
+    many European locales write ``;`` with decimal commas). With ``;`` the decimal mark is a
+    comma when a field of the first data lines is a number written with one.
+    """
+    try:
+        with open(path, encoding="utf-8-sig", errors="replace") as handle:
+            lines = [handle.readline() for _ in range(6)]
+    except OSError:
+        return ",", "."
+    header = lines[0]
+    if "," in header:
+        return ",", "."
+    if "\t" in header:
+        return "\t", "."
+    if ";" in header:
+        data = [line.strip() for line in lines[1:] if line.strip()]
+        decimal = "," if any(_DECIMAL_COMMA.search(line) for line in data) else "."
+        return ";", decimal
+    return ",", "."
 
 
 def _columns_listed(frame: Any) -> str:

@@ -39,6 +39,7 @@ from ._offsets import (
     tune_class_offsets,
 )
 from ._scorer import make_cost_scorer, realised_cost
+from ._settle import SettledCutoff, SettledOffsets, settle_class_offsets, settle_cutoff
 
 __all__ = [
     "BINARY_COST_KEYS",
@@ -51,6 +52,8 @@ __all__ = [
     "GuaranteedCutoff",
     "GuaranteedOffsets",
     "OffsetCurve",
+    "SettledCutoff",
+    "SettledOffsets",
     "action_savings",
     "add_reject_action",
     "apply_class_offsets",
@@ -72,6 +75,8 @@ __all__ = [
     "plugin_cutoff",
     "realised_cost",
     "search_cutoff",
+    "settle_class_offsets",
+    "settle_cutoff",
     "tune_class_offsets",
     "zero_one_costs",
 ]

@@ -12,6 +12,7 @@ from ..decision import (
     plugin_cutoff,
     realised_cost,
     search_cutoff,
+    settle_cutoff,
 )
 from ._common import binary_labels, estimator_classes, positive_proba
 from ._style import PALETTE, new_axes, style_axes
@@ -44,7 +45,9 @@ class CostCurveDisplay:
     every distinct probability (:func:`probwrap.decision.search_cutoff`). The display marks the
     cutoff with the least cost, its bootstrap interval (:func:`probwrap.decision.cutoff_interval`)
     and the Bayes plug-in cutoff of the costs (:func:`probwrap.decision.plugin_cutoff`), which is
-    optimal when the probabilities are calibrated. Under a capacity, decisions that flag too many
+    optimal when the probabilities are calibrated, and, where it differs from the least-cost
+    cutoff, the cutoff the rows support (:func:`probwrap.decision.settle_cutoff`, what
+    ``CostPolicyWrapper(strategy="tuned")`` uses). Under a capacity, decisions that flag too many
     rows are drawn greyed out.
 
     Parameters
@@ -56,21 +59,26 @@ class CostCurveDisplay:
         Mean cost per row of the plug-in cutoff and of the 0.5 cutoff on the same rows (None
         when the display was built from a stored curve without the rows).
     name : str, optional
+    settled_cutoff : float or None
+        The cutoff actually chosen (``CostPolicyWrapper.cutoff_``, or
+        :func:`~probwrap.decision.settle_cutoff` on the rows); None to mark only the least-cost
+        cutoff.
 
     Attributes
     ----------
     cutoffs, costs : ndarray
         The curve (same arrays as ``result.cutoffs`` and ``result.costs``).
     cutoff : float
-        The chosen cutoff (``result.cutoff``).
+        The least-cost cutoff (``result.cutoff``).
     cost : float
         Its mean cost.
     ax_, figure_ : matplotlib Axes and Figure
     line_ : Line2D
         The admissible part of the curve (``xdata`` cutoffs, ``ydata`` costs; NaN where a
         capacity excludes the decision).
-    chosen_line_, plugin_line_ : Line2D
-        Vertical markers.
+    chosen_line_, plugin_line_, settled_line_ : Line2D
+        Vertical markers (``settled_line_`` None where the settled cutoff is the least-cost one
+        or not given).
 
     Examples
     --------
@@ -97,8 +105,10 @@ class CostCurveDisplay:
         plugin_cost: float | None = None,
         half_cost: float | None = None,
         name: str | None = None,
+        settled_cutoff: float | None = None,
     ) -> None:
         self.result = result
+        self.settled_cutoff = None if settled_cutoff is None else float(settled_cutoff)
         self.cutoffs = result.cutoffs
         self.costs = result.costs
         self.cutoff = float(result.cutoff)
@@ -173,8 +183,10 @@ class CostCurveDisplay:
             plug = plugin_cutoff(matrix)
         except ValueError:
             plug = None
+        settled = None if plug is None else settle_cutoff(
+            p, y01, matrix, res, sample_weight=sample_weight).cutoff
         return cls(
-            result=res, plugin_cutoff=plug, interval=interval, name=name,
+            result=res, plugin_cutoff=plug, interval=interval, name=name, settled_cutoff=settled,
             plugin_cost=None if plug is None else cutoff_cost(y01, p, matrix, plug, sample_weight),
             half_cost=cutoff_cost(y01, p, matrix, 0.5, sample_weight),
         ).plot(ax=ax)
@@ -215,7 +227,7 @@ class CostCurveDisplay:
                 plug = None
             return cls(
                 result=curve, plugin_cutoff=plug, interval=estimator.cutoff_interval_,
-                name=name,
+                name=name, settled_cutoff=getattr(estimator, "cutoff_", None),
             ).plot(ax=ax)
         if X is None or y is None:
             raise ValueError("Give both `X` and `y` (labelled rows), or neither.")
@@ -249,6 +261,12 @@ class CostCurveDisplay:
             self.cutoff, color=PALETTE["chosen"], linewidth=1.4,
             label=f"least cost cutoff {self.cutoff:.3f}",
         )
+        self.settled_line_ = None
+        if self.settled_cutoff is not None and self.settled_cutoff != self.cutoff:
+            self.settled_line_ = ax.axvline(
+                self.settled_cutoff, color=PALETTE["chosen"], linestyle=(0, (1, 1)),
+                linewidth=1.6, label=f"settled cutoff {self.settled_cutoff:.3f}",
+            )
         self.plugin_line_ = None
         if self.plugin_cutoff is not None:
             self.plugin_line_ = ax.axvline(

@@ -1,0 +1,299 @@
+"""Choosing a cutoff the held-out rows can support: the plug-in cutoff unless the data object.
+
+The least-cost cutoff of :func:`~probwrap.decision.search_cutoff` is the exact minimiser of the
+empirical cost; on a few dozen held-out rows it often sits in a gap that a handful of rows
+decided, and it then costs more on new rows than the Bayes rule on the model's own probabilities.
+:func:`settle_cutoff` keeps the plug-in cutoff ``c_fp / (c_fp + c_fn)`` (Elkan 2001) unless the
+held-out rows show that it costs more than the minimum, and otherwise moves only as far from it as
+they demand.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from statistics import NormalDist
+from typing import Any
+
+import numpy as np
+
+from .._validation import check_same_length, check_sample_weight, check_scores
+from ..calibration._base import count_weights
+from ._costs import check_cost_matrix, plugin_cutoff
+from ._cutoff import CutoffSearchResult, _binary_targets, search_cutoff
+
+__all__ = ["SettledCutoff", "SettledOffsets", "settle_class_offsets", "settle_cutoff"]
+
+
+@dataclass(frozen=True)
+class SettledCutoff:
+    """Outcome of :func:`settle_cutoff`.
+
+    Attributes
+    ----------
+    cutoff : float
+        The chosen cutoff: ``plugin`` when the held-out rows do not show that it costs more than
+        the least-cost cutoff, otherwise the cutoff nearest ``plugin`` among those not shown to
+        cost more.
+    plugin : float
+        The plug-in (Bayes) cutoff of the cost matrix.
+    least_cost : float
+        The cutoff of least held-out cost (``search.cutoff``).
+    kept_plugin : bool
+        Whether ``cutoff`` is the plug-in cutoff.
+    excess : float
+        Held-out mean cost per row of the plug-in cutoff minus that of the least-cost cutoff.
+    excess_se : float
+        Standard error of ``excess`` (paired over rows, on Kish's effective sample size).
+    level : float
+        One-sided level of the test.
+    """
+
+    cutoff: float
+    plugin: float
+    least_cost: float
+    kept_plugin: bool
+    excess: float
+    excess_se: float
+    level: float
+
+
+def _check_level(level: Any) -> float:
+    try:
+        value = float(level)
+    except (TypeError, ValueError):
+        value = float("nan")
+    if not 0.0 < value < 0.5:
+        raise ValueError(f"`level` must be a number in (0, 0.5); got {level!r}.")
+    return value
+
+
+def settle_cutoff(
+    scores: Any,
+    y: Any,
+    costs: Any,
+    search: CutoffSearchResult | None = None,
+    *,
+    sample_weight: Any = None,
+    level: float = 0.05,
+) -> SettledCutoff:
+    """The plug-in cutoff unless held-out rows show that another cutoff costs less.
+
+    For probabilities ``scores`` and constant binary ``costs``: among all cutoffs whose held-out
+    mean cost exceeds the minimum by no more than ``z`` standard errors (``z`` the one-sided
+    normal quantile of ``1 - level``; the error is that of the paired per-row difference of the
+    two rules' costs), take the one nearest the plug-in cutoff ``(c_fp - c_tn) / ((c_fp - c_tn)
+    + (c_fn - c_tp))``; the plug-in cutoff itself when it qualifies. This is the
+    one-standard-error rule of Breiman et al. (1984, sec. 3.4.3) with the rule that needs no
+    held-out rows as the simplest model, and a one-sided test in place of one error. With many
+    rows the standard errors vanish and the least-cost cutoff is returned; with a few dozen
+    the plug-in cutoff is kept unless the rows clearly reject it.
+
+    Parameters
+    ----------
+    scores : array-like of shape (n,)
+        Held-out probabilities of the positive class.
+    y : array-like of shape (n,)
+        True classes coded 0 (negative) and 1 (positive).
+    costs : mapping or array-like of shape (2, 2)
+        Cost matrix (rows: true class, columns: negative / positive action) or the binary
+        shorthand ``{"tp", "fp", "fn", "tn"}``. Each error must cost more than the matching
+        correct decision (so that a plug-in cutoff exists).
+    search : CutoffSearchResult, default=None
+        The result of ``search_cutoff(scores, y, costs, sample_weight=sample_weight,
+        score_bounds=(0, 1))`` (with any ``capacity``); computed when None.
+    sample_weight : array-like of shape (n,), default=None
+        Row frequencies. Weights that sum to less than the number of rows count as Kish's
+        (1965) effective sample size, so scaling all weights does not change the choice.
+    level : float in (0, 0.5), default=0.05
+        One-sided level at which the held-out rows must show that a cutoff costs more than the
+        minimum for it to be passed over.
+
+    Returns
+    -------
+    SettledCutoff
+
+    Notes
+    -----
+    O(n) after the search: the class weights flagged at every searched cutoff follow from the
+    search's mean cost and flagged share (two linear equations), so no second sort is needed.
+    A capacity imposed in ``search`` is respected: only admissible cutoffs are chosen.
+
+    References
+    ----------
+    Breiman, L., Friedman, J., Olshen, R., Stone, C. (1984). Classification and Regression
+    Trees, sec. 3.4.3 (the one-standard-error rule). Elkan, C. (2001). The foundations of
+    cost-sensitive learning (the plug-in cutoff). Kish, L. (1965). Survey Sampling.
+
+    Examples
+    --------
+    >>> from probwrap.decision import settle_cutoff
+    >>> p = [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8]
+    >>> y = [0, 0, 0, 0, 0, 1, 1, 1]
+    >>> res = settle_cutoff(p, y, {"fp": 1.0, "fn": 3.0})
+    >>> res.plugin, res.least_cost, res.cutoff  # the plug-in cutoff wrongly flags 3 of 8 rows
+    (0.25, 0.55, 0.35)
+    """
+    s = check_scores(scores, name="scores", ndim=1)
+    n = check_same_length(("scores", s), ("y", np.asarray(y)))
+    yi = _binary_targets(y, n)
+    matrix = check_cost_matrix(costs, n_classes=2, n_actions=2)
+    level = _check_level(level)
+    w = np.ones(n) if sample_weight is None else check_sample_weight(sample_weight, n)
+    if search is None:
+        search = search_cutoff(s, yi, matrix, sample_weight=w, score_bounds=(0.0, 1.0))
+    t0 = plugin_cutoff(matrix)
+    total = float(w.sum())
+    pi1 = float(w[yi == 1].sum()) / total
+    pi0 = 1.0 - pi1
+    a0 = matrix[0, 1] - matrix[0, 0]  # extra cost of flagging a negative row (> 0)
+    a1 = matrix[1, 1] - matrix[1, 0]  # extra cost of flagging a positive row (< 0)
+    base = matrix[0, 0] * pi0 + matrix[1, 0] * pi1  # mean cost when nothing is flagged
+
+    # weighted shares of negative / positive rows flagged at every searched cutoff: from
+    # cost = base + a0 f0 + a1 f1 and share = f0 + f1
+    cost = np.asarray(search.costs, float)
+    share = np.asarray(search.flagged_share, float)
+    f0 = np.clip((cost - base - a1 * share) / (a0 - a1), 0.0, pi0)
+    f1 = np.clip(share - f0, 0.0, pi1)
+    # the plug-in cutoff's own decision, counted directly
+    flag = s > t0
+    f0_t = float(w[flag & (yi == 0)].sum()) / total
+    f1_t = float(w[flag & (yi == 1)].sum()) / total
+    cost_t = base + a0 * f0_t + a1 * f1_t
+
+    # the least-cost decision nearest the search's cutoff (a flat optimum spans several)
+    cutoffs = np.asarray(search.cutoffs, float)
+    admissible = np.asarray(search.admissible, bool)
+    least = np.min(cost[admissible])
+    at_min = np.flatnonzero(admissible & (cost <= least + 1e-9 * max(abs(least), 1e-300)))
+    best = int(at_min[np.argmin(np.abs(cutoffs[at_min] - search.cutoff))])
+    c_best = base + a0 * f0[best] + a1 * f1[best]
+    n_eff = float(count_weights(w[w > 0])[0].sum())
+    z = NormalDist().inv_cdf(1.0 - level)
+
+    def excess_and_se(g0, g1, c):
+        # per-row difference: a0 or a1 on the rows flagged by one rule only, else 0
+        d1 = c - c_best
+        d2 = a0 * a0 * np.abs(g0 - f0[best]) + a1 * a1 * np.abs(g1 - f1[best])
+        return d1, np.sqrt(np.maximum(d2 - d1 * d1, 0.0) / n_eff)
+
+    ex_t, se_t = excess_and_se(f0_t, f1_t, cost_t)
+    # relative tolerance for rounding in the reconstructed costs
+    tol = 1e-9 * max(abs(a0), abs(a1))
+    cap = search.capacity
+    if ex_t <= z * se_t + tol and (cap is None or f0_t + f1_t <= cap + 1e-12):
+        return SettledCutoff(float(t0), float(t0), float(search.cutoff), True, float(ex_t),
+                             float(se_t), level)
+    ex, se = excess_and_se(f0, f1, base + a0 * f0 + a1 * f1)
+    ok = admissible & (ex <= z * se + tol)
+    ok[best] = True
+    cands = np.flatnonzero(ok)
+    chosen = float(cutoffs[cands[np.argmin(np.abs(cutoffs[cands] - t0))]])
+    return SettledCutoff(chosen, float(t0), float(search.cutoff), False, float(ex_t),
+                         float(se_t), level)
+
+
+@dataclass(frozen=True)
+class SettledOffsets:
+    """Outcome of :func:`settle_class_offsets`.
+
+    Attributes
+    ----------
+    offsets : ndarray of shape (n_classes,)
+        ``share * tuned``: the tuned offsets shrunk toward zero (the plain Bayes rule).
+    share : float in [0, 1]
+        How much of the tuned offsets is kept (0: the Bayes rule, 1: the tuned offsets).
+    excess : float
+        Held-out mean cost per row of the Bayes rule minus that of the tuned offsets.
+    excess_se : float
+        Standard error of ``excess`` (paired over rows, on Kish's effective sample size).
+    level : float
+        One-sided level of the test.
+    """
+
+    offsets: np.ndarray
+    share: float
+    excess: float
+    excess_se: float
+    level: float
+
+
+def settle_class_offsets(
+    proba: Any,
+    y: Any,
+    costs: Any,
+    offsets: Any,
+    *,
+    sample_weight: Any = None,
+    level: float = 0.05,
+    n_steps: int = 20,
+) -> SettledOffsets:
+    """Shrink tuned class offsets toward zero as far as held-out rows allow.
+
+    The multiclass counterpart of :func:`settle_cutoff`: along the path ``s * offsets``,
+    ``s = 0, 1/n_steps, ..., 1``, the smallest ``s`` whose held-out mean cost exceeds that of
+    the tuned offsets (``s = 1``) by no more than ``z`` standard errors of the paired per-row
+    difference (``z`` the one-sided normal quantile of ``1 - level``). ``s = 0`` is the plain
+    Bayes rule on the probabilities, which needs no held-out rows; the one-standard-error rule
+    of Breiman et al. (1984, sec. 3.4.3) with it as the simplest rule.
+
+    Parameters
+    ----------
+    proba : array-like of shape (n, n_classes)
+        Held-out probabilities.
+    y : array-like of int of shape (n,)
+        Class indices 0 .. n_classes - 1.
+    costs : array-like of shape (n_classes, n_actions) or (n, n_classes, n_actions)
+        Cost matrix, or one per row.
+    offsets : array-like of shape (n_classes,)
+        Tuned offsets (e.g. ``tune_class_offsets(...).offsets``).
+    sample_weight : array-like of shape (n,), default=None
+        Row frequencies (weights summing to less than the rows count as Kish's effective size).
+    level : float in (0, 0.5), default=0.05
+    n_steps : int, default=20
+        Points on the path from zero to ``offsets``.
+
+    Returns
+    -------
+    SettledOffsets
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.decision import settle_class_offsets
+    >>> p = np.array([[0.6, 0.3, 0.1], [0.2, 0.5, 0.3], [0.1, 0.2, 0.7], [0.5, 0.4, 0.1]])
+    >>> res = settle_class_offsets(p, [0, 1, 2, 1], 1 - np.eye(3), [0.0, 0.5, 0.0])
+    >>> res.share, res.offsets.tolist()  # four rows cannot show that the offsets help
+    (0.0, [0.0, 0.0, 0.0])
+    """
+    from ._offsets import _adjusted_expected, _check_offsets, _prepare, _realised
+
+    p, yi, matrix, w, unit = _prepare(proba, y, costs, sample_weight)
+    b = _check_offsets(offsets, p.shape[1])
+    level = _check_level(level)
+    if int(n_steps) < 1:
+        raise ValueError(f"`n_steps` must be a positive integer; got {n_steps!r}.")
+    total = float(w.sum())
+    # _prepare rescales the weights by a power of two; the count uses them as given
+    raw = w if sample_weight is None else check_sample_weight(sample_weight, w.shape[0])
+    n_eff = float(count_weights(raw[raw > 0])[0].sum())
+    z = NormalDist().inv_cdf(1.0 - level)
+
+    def row_costs(offs):
+        return _realised(matrix, yi, np.argmin(_adjusted_expected(p, matrix, offs), axis=1))
+
+    tuned = row_costs(b)
+    tol = 1e-9 * float(np.max(np.abs(matrix))) if matrix.size else 0.0
+    shares = np.arange(int(n_steps) + 1) / int(n_steps)
+    excess0 = se0 = 0.0
+    chosen = 1.0
+    for i, s in enumerate(shares):
+        d = row_costs(s * b) - tuned
+        mean = float(w @ d) / total
+        se = float(np.sqrt(max(float(w @ (d - mean) ** 2) / total, 0.0) / n_eff))
+        if i == 0:
+            excess0, se0 = mean, se
+        if mean <= z * se + tol:
+            chosen = float(s)
+            break
+    return SettledOffsets(chosen * b, chosen, excess0 * unit, se0 * unit, level)
