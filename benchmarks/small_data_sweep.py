@@ -362,6 +362,17 @@ def sweep_array_core(p, y, k, where, rng):
             n_resamples=30, random_state=0)
         run("decision.guaranteed_cutoff", where, decision.guaranteed_cutoff, s, y, costs,
             requirement="recall", target=0.8)
+        comp = "decision.settle_cutoff"
+        pp = p[:, 1]
+        outs = [run(comp, where, decision.settle_cutoff, pp, y, costs, sample_weight=sw.copy())
+                for sw in ws]
+        cut = [None if o is None else o.cutoff for o in outs]
+        if pairs_differ(cut):
+            note(comp, "wscale", where, f"{cut}")
+        fw = run(comp, where, decision.settle_cutoff, pp, y, costs, sample_weight=w.copy())
+        d = run(comp, where, decision.settle_cutoff, pp[dup], y[dup], costs)
+        if d is not None and fw is not None and not same(fw.cutoff, d.cutoff):
+            note(comp, "freq", where, f"{fw.cutoff} vs {d.cutoff}")
     else:
         comp = "decision.tune_class_offsets"
         outs = [run(comp, where, decision.tune_class_offsets, p, y, costs, sample_weight=sw.copy())
@@ -369,6 +380,18 @@ def sweep_array_core(p, y, k, where, rng):
         offs = [None if o is None else getattr(o, "offsets", None) for o in outs]
         if pairs_differ(offs):
             note(comp, "wscale", where, f"{offs}")
+        comp = "decision.settle_class_offsets"
+        tuned = outs[0].offsets if outs[0] is not None else np.zeros(k)
+        shares = [None if o is None else o.share for o in (
+            run(comp, where, decision.settle_class_offsets, p, y, costs, tuned,
+                sample_weight=sw.copy()) for sw in ws)]
+        if pairs_differ(shares):
+            note(comp, "wscale", where, f"{shares}")
+        fw = run(comp, where, decision.settle_class_offsets, p, y, costs, tuned,
+                 sample_weight=w.copy())
+        d = run(comp, where, decision.settle_class_offsets, p[dup], y[dup], costs, tuned)
+        if d is not None and fw is not None and fw.share != d.share:
+            note(comp, "freq", where, f"{fw.share} vs {d.share}")
 
 
 # --------------------------------------------------------------------------- cost rules
