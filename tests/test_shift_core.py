@@ -375,3 +375,24 @@ def test_bcts_separated_classes_stay_inside_zero_one():
     # floored, then renormalised: at least floor / (1 + (k - 1) floor)
     assert out.min() >= cal.floor_ / (1 + 2 * cal.floor_) * (1 - 1e-9) and out.max() < 1.0
     assert cal.floor_ == pytest.approx(1 / (2 * 46 * 2))
+
+
+def test_em_prior_ignores_rows_of_weight_zero_without_a_warning():
+    # A bootstrap resample gives some rows weight 0; with probabilities exactly 0 or 1 among
+    # them, the sums at the boundary t = 0 used to compute 0 * inf = nan ("invalid value
+    # encountered in matmul"). Rows of weight zero must change nothing: the estimate equals the
+    # one on the rows of positive weight alone (consistency check).
+    import warnings
+
+    from probwrap.shift import em_prior
+
+    rng = np.random.default_rng(0)
+    p = rng.uniform(size=200)
+    p[:5], p[5:10] = 0.0, 1.0
+    w = rng.poisson(1.0, size=200).astype(float)
+    w[:10] = 0.0
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        full = em_prior(np.c_[1 - p, p], [0.7, 0.3], sample_weight=w)
+    kept = em_prior(np.c_[1 - p, p][w > 0], [0.7, 0.3], sample_weight=w[w > 0])
+    np.testing.assert_allclose(full.prior, kept.prior, rtol=0, atol=1e-12)

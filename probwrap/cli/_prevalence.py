@@ -10,8 +10,10 @@ Two ways in:
   confusion matrices for ``bbse``, ``acc`` and ``pacc``), then estimates the batch's prevalence
   with a bootstrap interval over both files.
 
-Both report the likelihood-ratio test of "the prevalence has not moved"
-(:func:`probwrap.shift.shift_test`).
+Both report a test of "the prevalence has not moved": with ``--source-prevalence`` the
+likelihood-ratio test against that prevalence taken as exact (:func:`probwrap.shift.shift_test`);
+with ``--reference`` the two-sample score test, which also carries the labelled file's own error
+(``PriorEstimate.shift_statistic``, on the chi-square scale).
 
 With ``--batch-size N`` or ``--batch-column C`` the prevalence is also estimated batch by batch
 (in the order of each batch's first row), and a two-sided CUSUM of the batch estimates against the

@@ -225,8 +225,8 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         f"<th>estimated target share ({_text(c.prior_method)})</th>"
         + (f"<th>{level} low</th><th>{level} high</th>" if iv is not None else "")
         + f"</tr></thead><tbody>{rows}"
-        f'<tr data-item="shift_statistic"><td>shift test statistic (likelihood ratio, '
-        f"chi-square {c.n_classes - 1} df)</td>{_num(c.shift_statistic)}</tr>"
+        f'<tr data-item="shift_statistic"><td>shift test statistic (score test, on the '
+        f"chi-square scale, {c.n_classes - 1} df)</td>{_num(c.shift_statistic)}</tr>"
         f'<tr data-item="shift_pvalue"><td>shift test p-value</td>'
         f'<td data-value="{c.shift_pvalue!r}">{c.shift_pvalue:.3g}</td></tr></tbody></table>'
     )

@@ -231,8 +231,8 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
                 f"{c.confidence_level:.0%} interval, high</td>{_num(iv[1])}</tr>"
                 if iv is not None else ""
             )
-            + f'<tr data-item="shift_statistic"><td>shift test statistic (likelihood ratio, '
-            f"chi-square 1 df)</td>{_num(c.shift_statistic)}</tr>"
+            + f'<tr data-item="shift_statistic"><td>shift test statistic (score test, on the '
+            f"chi-square scale, 1 df)</td>{_num(c.shift_statistic)}</tr>"
             f'<tr data-item="shift_pvalue"><td>shift test p-value</td>'
             f'<td data-value="{c.shift_pvalue!r}">{c.shift_pvalue:.3g}</td></tr>'
             + (

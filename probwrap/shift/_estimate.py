@@ -154,6 +154,11 @@ def _binary_solve(
     ``(t, n_iter, converged, distance)``.
     """
     a0, a1 = float(pseudo[0]), float(pseudo[1])
+    if np.any(w == 0):
+        # rows of weight zero (e.g. left out of a bootstrap resample) add nothing, but at t = 0
+        # or 1 a row without mass there gives 0 * inf = nan in the sums below
+        keep = w > 0
+        q0, q1, w = q0[keep], q1[keep], w[keep]
     d = q1 - q0
 
     def grad(t: float) -> tuple[float, float]:
