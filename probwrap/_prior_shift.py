@@ -516,7 +516,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if _is_dask(X):
             return self._dask_predict(self.predict_proba, X, self.classes_.shape[0])
         proba = self._inner_output(X, "predict_proba")
-        calibrated = self.prior_estimator_.calibrate(proba)
+        calibrated = self.prior_estimator_.calibrate_output(proba)
         prior = self._prior_in_use()
         if np.allclose(prior, self.source_prior_, rtol=0.0, atol=1e-12):
             return calibrated

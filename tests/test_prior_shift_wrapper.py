@@ -41,7 +41,7 @@ def test_identity_before_adapt(fitted):
     # posteriors, re-weighted only once a prior other than the source prior is in use.
     model, rng = fitted
     X, _ = gaussian_data(50, 0.5, rng)
-    calibrated = model.prior_estimator_.calibrate(model.estimator_.predict_proba(X))
+    calibrated = model.prior_estimator_.calibrate_output(model.estimator_.predict_proba(X))
     np.testing.assert_array_equal(model.predict_proba(X), calibrated)
     np.testing.assert_array_equal(model.applied_prior_, model.source_prior_)
     raw = clone(model).set_params(calibration=None).fit(*gaussian_data(600, 0.3, rng))
@@ -80,7 +80,7 @@ def test_known_target_prior_array_dict_and_float_agree():
         outs.append(m.fit(X, labels).predict_proba(X_new))
     np.testing.assert_allclose(outs[0], outs[1], atol=1e-15)
     np.testing.assert_allclose(outs[0], outs[2], atol=1e-15)
-    expected = adjust_to_prior(m.calibrator_.predict(m.estimator_.predict_proba(X_new)),
+    expected = adjust_to_prior(m.calibrator_.predict_output(m.estimator_.predict_proba(X_new)),
                                m.source_prior_, [0.2, 0.8])
     np.testing.assert_allclose(outs[0], expected, atol=1e-15)
 
@@ -108,7 +108,7 @@ def test_source_prior_is_weighted_and_refit_clears_adaptation():
     m.fit(X, y)
     assert not hasattr(m, "target_prior_")
     np.testing.assert_array_equal(
-        m.predict_proba(X[:5]), m.prior_estimator_.calibrate(m.estimator_.predict_proba(X[:5]))
+        m.predict_proba(X[:5]), m.prior_estimator_.calibrate_output(m.estimator_.predict_proba(X[:5]))
     )
 
 
@@ -176,8 +176,8 @@ def test_cost_policy_actions_move_after_adapt():
     from probwrap.shift import shift_cutoff
 
     inner = policy.estimator_
-    raw = inner.calibrator_.predict(inner.estimator_.predict_proba(X_new))[:, 1]
-    moved = shift_cutoff(policy.cutoff_, inner.source_prior_[1], inner.target_prior_[1])
+    raw = inner.calibrator_.predict_output(inner.estimator_.predict_proba(X_new))[:, 1]
+    moved = shift_cutoff(policy.cutoff_, inner.source_prior_[1], inner.applied_prior_[1])
     agree = np.mean((raw > moved) == (after == 1))
     assert agree > 0.999
 

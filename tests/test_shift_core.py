@@ -335,7 +335,7 @@ def test_bcts_multiclass_matches_scipy_minimiser_and_bias_property():
 
 
 def test_bcts_prior_matches_scipy_minimiser_keeps_bias_property():
-    # The default fit adds the weak gamma prior 0.5 * (a - log a - 1) (in rows) on the scale.
+    # The default fit adds the weak gamma prior 5 * (a - log a - 1) (in rows) on the scale.
     # Reference: SciPy's BFGS on that penalised log-likelihood written out here; the biases'
     # score equations are untouched, so the mean calibrated posterior still equals the class
     # frequencies (Alexandari et al. 2020) up to the output floor.
@@ -350,7 +350,7 @@ def test_bcts_prior_matches_scipy_minimiser_keeps_bias_property():
         if theta[0] <= 0:
             return np.inf
         logp = log_softmax(z * theta[0] + np.r_[0.0, theta[1:]], axis=1)
-        return -logp[np.arange(n), y].sum() + 0.5 * (theta[0] - np.log(theta[0]) - 1.0)
+        return -logp[np.arange(n), y].sum() + 5.0 * (theta[0] - np.log(theta[0]) - 1.0)
 
     ref = minimize(objective, np.r_[1.0, 0.0, 0.0], method="Nelder-Mead",
                    options={"xatol": 1e-10, "fatol": 1e-12, "maxiter": 20000}).x

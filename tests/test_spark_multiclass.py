@@ -116,7 +116,7 @@ def test_multiclass_scoring_monitoring_and_costs_of_x_on_spark(spark, digits):
     adjusted = [f"s_adjusted_probability_{c}" for c in range(10)]
     np.testing.assert_allclose(scored[adjusted], shift.predict_proba(X_test), rtol=1e-12)
     np.testing.assert_allclose(
-        scored[names], shift.prior_estimator_.calibrate(model.predict_proba(X_test)), rtol=1e-12)
+        scored[names], shift.prior_estimator_.calibrate_output(model.predict_proba(X_test)), rtol=1e-12)
     np.testing.assert_array_equal(scored["s_action"], shift.predict(X_test))
 
     # monitor by a batch column: each week estimated on an executor, rows in a canonical order

@@ -201,7 +201,7 @@ def test_add_predictions_and_monitor_by_batch_column(spark, model):
     scored = add_predictions(policy, add_predictions(shift, wframe, prefix="shift_"))
     got = scored.toPandas().sort_values("row")
     expect_adjusted = shift.predict_proba(winter[COLS])[:, 1]
-    calibrated = shift.prior_estimator_.calibrate(model.predict_proba(winter[COLS]))[:, 1]
+    calibrated = shift.prior_estimator_.calibrate_output(model.predict_proba(winter[COLS]))[:, 1]
     np.testing.assert_allclose(got["shift_adjusted_probability"], expect_adjusted, rtol=1e-12)
     np.testing.assert_allclose(got["shift_probability"], calibrated, rtol=1e-12)
     np.testing.assert_array_equal(got["shift_action"], shift.predict(winter[COLS]))

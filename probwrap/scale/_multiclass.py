@@ -130,7 +130,13 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     estimator, whose ``n_resamples`` is 0 (no bootstrap for multiclass Dask input).
     """
     from ..shift import PriorEstimator
-    from ..shift._calibration import BiasCorrectedScaling, _floor, _newton, scale_penalty
+    from ..shift._calibration import (
+        BiasCorrectedScaling,
+        _floor,
+        _newton,
+        identity_test,
+        scale_penalty,
+    )
     from ..shift._shift_tests import _source_moments_from_sums
 
     estimator, classes = _frozen_multiclass(owner, y)
@@ -183,7 +189,14 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
 
             theta0 = np.concatenate([np.ones(n_scale), np.zeros(k - 1)])
             theta, converged = _newton(loss_grad, hess, theta0, n_scale)
-            cal = BiasCorrectedScaling(kind=kind)
+            # as in memory: output the model's own probabilities unless a likelihood-ratio test
+            # rejects them against the fitted map (BiasCorrectedScaling.identity_level)
+            template = BiasCorrectedScaling(kind=kind)
+            pvalue, keep = identity_test(float(terms(theta0)[0][0]), float(terms(theta)[0][0]),
+                                         n_rows, theta.shape[0], template.identity_level)
+            cal = template
+            cal.identity_pvalue_ = pvalue
+            cal.identity_kept_ = bool(keep)
             cal.scale_ = np.array(np.broadcast_to(theta[:n_scale], (k,)), dtype=float)
             cal.bias_ = np.concatenate([[0.0], theta[n_scale:]])
             cal.n_classes_ = k

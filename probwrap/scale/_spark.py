@@ -712,7 +712,7 @@ def add_predictions(model: Any, frame: Any, *, prefix: str = "") -> Any:
         out = {}
         if adjusted:
             raw = np.asarray(fitted.estimator_.predict_proba(X), dtype=float)
-            put(out, "probability", np.asarray(fitted.prior_estimator_.calibrate(raw)))
+            put(out, "probability", np.asarray(fitted.prior_estimator_.calibrate_output(raw)))
             put(out, "adjusted_probability", np.asarray(fitted.predict_proba(X), dtype=float))
         else:
             put(out, "probability", np.asarray(fitted.predict_proba(X), dtype=float))

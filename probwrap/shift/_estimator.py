@@ -247,6 +247,18 @@ class PriorEstimator(_Resampling):
             )
         return p if self.calibrator_ is None else self.calibrator_.predict(p)
 
+    def calibrate_output(self, proba: Any) -> np.ndarray:
+        """Posteriors to return to a user: :meth:`calibrate`, or the model's own (floored) where
+        the calibration's likelihood-ratio test kept them (``calibrator_.identity_kept_``)."""
+        self._check_fitted()
+        p = check_proba(proba, name="proba", ndim=2)
+        if p.shape[1] != self.n_classes_:
+            raise ValueError(
+                f"`proba` has {p.shape[1]} columns but the estimator was fitted on "
+                f"{self.n_classes_} classes."
+            )
+        return p if self.calibrator_ is None else self.calibrator_.predict_output(p)
+
     def _check_fitted(self) -> None:
         if not hasattr(self, "source_prior_"):
             raise ValueError("This PriorEstimator is not fitted yet; call fit first.")
