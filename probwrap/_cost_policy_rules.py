@@ -134,6 +134,8 @@ class _RuleFitting:
             )
             self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res,
                                          sample_weight=ho.sample_weight).cutoff
+            if getattr(ho, "from_tally", False) and ho.response == "predict_proba":
+                self.cutoff_ = _cutoff_at_bin_edge(self.tally_, self.cutoff_)
             self.cost_curve_ = res
             del res
             if keep:
@@ -222,3 +224,27 @@ def _num_rows(X: Any) -> int:
     if shape is not None and len(shape) > 0:
         return int(shape[0])
     return len(X)
+
+
+def _cutoff_at_bin_edge(tally: Any, cutoff: float) -> float:
+    """Move a cutoff chosen on tally rows (Dask/Spark) to the edge between the bins it separates.
+
+    A tally row stands for every row of its bin, at the bin's mean score. A cutoff between two
+    representatives (the searched midpoints, or the plug-in cutoff the settling step keeps) can
+    still fall inside a bin, where some of the bin's rows are decided unlike its representative,
+    so the cost read from the tally would not be that of the rule ``predict`` applies. At the upper
+    edge of the last bin left unflagged the decisions of the tally rows are the same, and those of
+    every tallied row agree with their bin's.
+    """
+    from scipy.special import expit
+
+    reps = expit(tally.bin_scores)  # the tally rows' probabilities
+    edges = tally.bin_edges
+    below = reps <= cutoff
+    if below.all():
+        return float(max(cutoff, expit(edges[:, 1].max())))
+    if not below.any():
+        return float(min(cutoff, np.nextafter(expit(edges[:, 0].min()), -np.inf)))
+    edge = float(expit(edges[below, 1].max()))
+    # keep the representatives' decisions (a representative can sit on its bin's lower edge)
+    return edge if edge < reps[~below].min() else float(cutoff)

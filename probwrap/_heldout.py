@@ -221,7 +221,24 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     UserWarning,
                     stacklevel=3,
                 )
-            values = self._cross_fit(X, y_arr, splits, est_params, response, classes)
+            try:
+                values = self._cross_fit(X, y_arr, splits, est_params, response, classes)
+            except ValueError as exc:
+                if not short:
+                    raise
+                # the estimator refused a training part that lacks a class: say which and why
+                counts = np.bincount(y_index, minlength=n_classes)
+                rare = [f"{plain(classes[j])!r} ({int(counts[j])} row(s))"
+                        for j in range(n_classes) if counts[j] < n_folds]
+                raise ValueError(
+                    f"Cross-fitting `estimator` ({type(self.estimator).__name__}) failed: the "
+                    f"training part of fold(s) {short[:5]} of {n_folds} lacks a class, and the "
+                    f"estimator cannot be fitted without it. Rare classes: {', '.join(rare)}. "
+                    "Give every class at least 2 rows (better: as many as folds), use fewer "
+                    "folds (`cv`), or pass a model fitted elsewhere inside "
+                    "sklearn.frozen.FrozenEstimator so nothing is refitted here. "
+                    f"The estimator said: {exc}"
+                ) from exc
             estimator = clone(self.estimator).fit(X, y_arr, **est_params)
 
         if sw is not None:

@@ -209,3 +209,22 @@ def test_y_errors(cancer):
         Collect(LogisticRegression()).fit(X, np.linspace(0, 1, len(y)))
     with pytest.raises(ValueError, match="`sample_weight` has 3 entries"):
         Collect(LogisticRegression()).fit(X, y, sample_weight=[1, 2, 3])
+
+
+def test_a_class_too_rare_to_cross_fit_gives_an_error_naming_it_and_the_remedy():
+    # One positive among 40 held-out rows of scikit-learn's breast-cancer set: the training part
+    # of the fold holding it has no positive, and a logistic regression (here inside a
+    # calibration wrapper, the common nesting) refuses to be fitted on one class. The error must
+    # say so, name the rare class and its count and the remedies, not only repeat the inner
+    # estimator's "only one class" from inside scikit-learn's fold loop.
+    from probwrap import CalibrationWrapper, CostPolicyWrapper
+
+    X, y = load_breast_cancer(return_X_y=True)
+    y = 1 - y
+    rows = np.r_[np.flatnonzero(y == 0)[:39], np.flatnonzero(y == 1)[:1]]
+    est = CostPolicyWrapper(CalibrationWrapper(LogisticRegression(max_iter=5000)),
+                            costs={"fn": 5, "fp": 1}, strategy="tuned")
+    with pytest.warns(UserWarning, match="absent from the training part"):
+        with pytest.raises(ValueError, match=r"Cross-fitting `estimator` \(CalibrationWrapper\) "
+                           r"failed.*Rare classes: 1 \(1 row\(s\)\).*FrozenEstimator"):
+            est.fit(X[rows], y[rows])
