@@ -19,7 +19,12 @@ from ._heldout import (
     check_fitted,
 )
 from ._validation import plain
-from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
+from .calibration._base import (
+    CalibrationMap,
+    WeightScaleWarning,
+    count_weights,
+    one_vs_rest_copy,
+)
 from .calibration._binning import BinningMap
 from .calibration._identity import IdentityMap
 from .calibration._isotonic import IsotonicMap
@@ -395,7 +400,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         maps: list = [None] * n_classes
         for k in np.flatnonzero(fitted):
             yk = (y_index == k).astype(int)
-            maps[k] = clone(template).fit(
+            maps[k] = one_vs_rest_copy(template, n_classes).fit(
                 self._map_input(template, ovr[:, k]), yk, sample_weight=w
             )
         if not fitted.all():
@@ -436,7 +441,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             )
         elif pooled is not None:
             s, yk, wk = pooled
-            shared = clone(template).fit(self._map_input(template, s), yk, sample_weight=wk)
+            shared = one_vs_rest_copy(template, n_classes).fit(
+                self._map_input(template, s), yk, sample_weight=wk
+            )
             for k in missing:
                 maps[k] = shared
             done = (

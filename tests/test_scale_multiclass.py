@@ -76,6 +76,10 @@ def test_multiclass_calibration_on_dask(client, model, method, tol):
     elif method == "platt":
         # one-vs-rest Platt maps from tallies: scikit-learn's log_loss within 1e-4
         assert abs(log_loss(y, p_remote) - log_loss(y, p_local)) < tol
+        # both paths share the one-vs-rest floor among the k - 1 = 2 other classes
+        for r_map, l_map in zip(remote.calibrator_, local.calibrator_, strict=True):
+            assert r_map.floor_ == pytest.approx(1 / ((12_000 + 2) * 2), rel=1e-12)
+            assert l_map.floor_ == pytest.approx(1 / ((12_000 + 2) * 2), rel=1e-12)
     else:
         assert np.mean(np.abs(p_remote - p_local)) < tol
     np.testing.assert_allclose(p_remote, remote.predict_proba(X))

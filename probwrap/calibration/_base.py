@@ -6,7 +6,7 @@ import warnings
 from typing import Any
 
 import numpy as np
-from sklearn.base import BaseEstimator
+from sklearn.base import BaseEstimator, clone
 from sklearn.utils.validation import check_is_fitted
 
 from .._validation import (
@@ -18,7 +18,7 @@ from .._validation import (
     plain,
 )
 
-__all__ = ["CalibrationMap", "NONPARAMETRIC", "WeightScaleWarning"]
+__all__ = ["CalibrationMap", "NONPARAMETRIC", "WeightScaleWarning", "one_vs_rest_copy"]
 
 #: ``complexity`` of maps whose number of free parameters grows with the data.
 NONPARAMETRIC = 1e9
@@ -81,6 +81,22 @@ def rule_of_succession_targets(y: np.ndarray, w: np.ndarray, k: int) -> tuple[np
     return (counts + 1.0) / (counts + k), 1.0 / (counts + k)
 
 
+def one_vs_rest_copy(template: CalibrationMap, n_classes: int) -> CalibrationMap:
+    """An unfitted copy of the binary map ``template`` for one class of ``n_classes`` (fitted
+    one-vs-rest): its label 0 stands for the ``n_classes - 1`` other classes.
+
+    The regularisation that gives probability to the rest's side of a one-vs-rest map (the
+    negatives' smoothed target ``1 / (N- + 2)``, the output floor ``1 / (N + 2)``, a bin's
+    prior) is then shared by those ``k - 1`` classes: each map gets ``1 / (k - 1)`` of it, so
+    the ``k - 1`` wrong classes of a row together keep about what the one wrong class of a
+    binary map keeps, instead of ``k - 1`` times as much. With ``n_classes = 2`` the copy is an
+    ordinary binary map.
+    """
+    m = clone(template)
+    m._rest_classes = max(int(n_classes) - 1, 1)
+    return m
+
+
 class CalibrationMap(BaseEstimator):
     """Base class of every calibration map.
 
@@ -108,6 +124,9 @@ class CalibrationMap(BaseEstimator):
     #: rough number of free parameters, used to prefer simpler maps; nonparametric maps use
     #: :data:`NONPARAMETRIC` (a very large number) so that any parametric map counts as simpler
     complexity: float = 2.0
+    #: number of classes the label 0 stands for: 1 for a binary problem, ``k - 1`` for a map
+    #: fitted one-vs-rest for one of ``k`` classes (set by :func:`one_vs_rest_copy`)
+    _rest_classes: int = 1
 
     def fit(self, scores: Any, y: Any, sample_weight: Any = None) -> CalibrationMap:
         """Fit the map.
@@ -215,14 +234,18 @@ class CalibrationMap(BaseEstimator):
         Krichevsky-Trofimov (1981) add-one-half estimate ``(0 + 1/2) / (n + 1)`` of the
         probability of an error after ``n`` rows without one, shared by the ``k - 1`` other
         classes. Either way a calibration set of ``n`` rows supports no probability more
-        extreme than that.
+        extreme than that. A binary map fitted one-vs-rest for one of ``c`` classes
+        (``_rest_classes = c - 1``, see :func:`one_vs_rest_copy`) shares the Laplace floor with
+        the other ``c - 1`` one-vs-rest maps: ``1 / ((n + 2) (c - 1))``, so that the ``c - 1``
+        wrong classes of a row together keep at least ``1 / (n + 2)``, as the one wrong class of
+        a binary map does.
         """
         with np.errstate(over="ignore"):  # a total beyond the largest double gives a floor of 0
             n = float(w.sum())
             if rule == "half":
                 self.floor_ = float(1.0 / (2.0 * (n + 1.0) * (k - 1)))
             else:
-                self.floor_ = float(1.0 / (n + k))
+                self.floor_ = float(1.0 / ((n + k) * self._rest_classes))
 
     # -- helpers ---------------------------------------------------------------------------
     def _check_scores(self, scores: Any, *, fitting: bool) -> np.ndarray:

@@ -98,7 +98,7 @@ class BetaMap(CalibrationMap):
                 stacklevel=3,
             )
         if self.smooth_targets:
-            y = smoothed_binary_targets(y, w)
+            y = smoothed_binary_targets(y, w, self._rest_classes)
             self._set_floor(w, 2)
         w = w / power_of_two_unit(w)  # weights enter as a weighted mean; keeps the sum finite
         wn = w / w.sum()

@@ -127,6 +127,9 @@ class BinningMap(CalibrationMap):
         bin_weight = np.bincount(used, weights=weight, minlength=n_used)
         bin_label = np.bincount(used, weights=label_sum, minlength=n_used)
         rate = label_sum.sum() / total
+        # (one-vs-rest for one of k classes the prior stays as it is: centred on each class's
+        # own rate, the k maps' priors together are one prior worth prior_strength rows spread
+        # over the k classes in proportion to their rates; only the floor is shared)
         strength = float(self.prior_strength) / unit
         self.values_ = np.clip((bin_label + rate * strength) / (bin_weight + strength), 0.0, 1.0)
         upper_first = np.flatnonzero(new_bin)[1:]  # first distinct score of bins 1, 2, ...

@@ -148,7 +148,10 @@ class IsotonicMap(CalibrationMap):
                 unit = power_of_two_unit(w)
                 n_pos = min(float((w / unit) @ y) * unit, _COUNT_CAP)
                 n_neg = min(float((w / unit) @ (1.0 - y)) * unit, _COUNT_CAP)
-            t_neg, t_pos = 1.0 / (n_neg + 2.0), (n_pos + 1.0) / (n_pos + 2.0)
+            # one-vs-rest for one of k classes: the negatives' target is shared by the k - 1
+            # classes they stand for (see one_vs_rest_copy)
+            t_neg = 1.0 / ((n_neg + 2.0) * self._rest_classes)
+            t_pos = (n_pos + 1.0) / (n_pos + 2.0)
             self._set_floor(w, 2)
         # the fit is a weighted mean per block, unchanged by scaling every weight; a power of two
         # (exact) keeps the block sums finite for weights near the largest double

@@ -93,10 +93,15 @@ def _separated(s: np.ndarray, y: np.ndarray, w: np.ndarray) -> bool:
     return bool(up or down)
 
 
-def smoothed_binary_targets(y: np.ndarray, w: np.ndarray) -> np.ndarray:
-    """Platt's (1999) targets: ``(N+ + 1) / (N+ + 2)`` for positives, ``1 / (N- + 2)`` else."""
+def smoothed_binary_targets(y: np.ndarray, w: np.ndarray, rest_classes: int = 1) -> np.ndarray:
+    """Platt's (1999) targets: ``(N+ + 1) / (N+ + 2)`` for positives, ``1 / (N- + 2)`` else.
+
+    For a one-vs-rest map whose negatives stand for ``rest_classes = k - 1`` classes, the
+    negatives' target is shared by them: ``1 / ((N- + 2) (k - 1))`` (see
+    :func:`~probwrap.calibration._base.one_vs_rest_copy`); ``rest_classes = 1`` is Platt's.
+    """
     true, other = rule_of_succession_targets(y, w, 2)
-    return np.where(y == 1, true, other)
+    return np.where(y == 1, true, other / rest_classes)
 
 
 class PlattMap(CalibrationMap):
@@ -170,7 +175,7 @@ class PlattMap(CalibrationMap):
                 stacklevel=3,
             )
         if self.smooth_targets:
-            t = smoothed_binary_targets(y, w)
+            t = smoothed_binary_targets(y, w, self._rest_classes)
             self._set_floor(w, 2)
         else:
             t = y

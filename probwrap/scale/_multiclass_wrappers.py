@@ -109,7 +109,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     from sklearn.base import clone
 
     from .._predictions import resolve_response
-    from ..calibration._base import WeightScaleWarning
+    from ..calibration._base import WeightScaleWarning, one_vs_rest_copy
     from ..calibration._temperature import (
         _LOG_SPAN,
         TemperatureMap,
@@ -222,7 +222,11 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     for j in np.flatnonzero(fitted):
         class_rows[j] = merged[j].to_rows()
         s, yk, wk = class_rows[j]
-        maps[j] = clone(template).fit(owner._map_input(template, s), yk, sample_weight=wk)
+        # the same one-vs-rest copy as in memory (CalibrationWrapper._fit_map): the rest's
+        # share of the regularisation is divided among its k - 1 classes
+        maps[j] = one_vs_rest_copy(template, k).fit(
+            owner._map_input(template, s), yk, sample_weight=wk
+        )
     if not fitted.all():
         # as in memory (CalibrationWrapper._fill_absent_classes): the model's own probability,
         # a map on the pooled one-vs-rest rows (decision values), or with a single class
