@@ -146,8 +146,11 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         With ``guarantee``: the certified rules, the achieved value of the requirement on the
         held-out rows, its guaranteed bound and p-value (per floored class for recall floors).
     cutoff_interval_ : CutoffInterval or None
-        ``"tuned"`` binary cutoff: bootstrap interval of the cutoff and its spread across folds,
-        computed on first access. None otherwise.
+        ``"tuned"`` binary cutoff: bootstrap interval of the least-cost cutoff
+        (``cost_curve_.cutoff``) and its spread across folds, computed on first access. None
+        otherwise. It describes where the least-cost cutoff lies; ``cutoff_`` can lie outside it
+        when the held-out rows do not show the least-cost cutoff to cost less than the plug-in
+        cutoff (see ``strategy``), which is then kept.
 
     Examples
     --------

@@ -172,7 +172,7 @@ def test_weighted_rows_tally_bootstrap_replicates_on_the_executors(spark, model)
                                [w[y == 0].sum(), w[y == 1].sum()], rtol=1e-12)
     iv = policy.cutoff_interval_
     assert iv.bootstrap_cutoffs.shape == (40,) and np.unique(iv.bootstrap_cutoffs).shape[0] > 1
-    assert iv.low <= policy.cutoff_ <= iv.high
+    assert iv.low <= policy.cost_curve_.cutoff <= iv.high  # the least-cost cutoff's interval
     local = CostPolicyWrapper(model, costs=COSTS, strategy="tuned").fit(X, y, sample_weight=w)
     realised = {}
     for name, fitted in (("spark", policy), ("memory", local)):
