@@ -200,6 +200,22 @@ def pairs_differ(values) -> bool:
     return not (same(values[0], values[1]) and same(values[2], values[3]))
 
 
+def weight_rules(comp, where, fn, args, dup_args, ws, w, value, equal=None):
+    """Run ``fn(*args, sample_weight=...)`` under each weight scaling in ``ws`` (the choice must
+    not move) and with frequency weights ``w`` against the rows duplicated (``fn(*dup_args)``,
+    the same answer); note any difference. ``value`` reads the compared number from a result."""
+    equal = same if equal is None else equal
+    outs = [run(comp, where, fn, *args, sample_weight=sw.copy()) for sw in ws]
+    vals = [None if o is None else value(o) for o in outs]
+    if pairs_differ(vals):
+        note(comp, "wscale", where, f"{vals}")
+    fw = run(comp, where, fn, *args, sample_weight=w.copy())
+    d = run(comp, where, fn, *dup_args)
+    if d is not None and fw is not None and not equal(value(fw), value(d)):
+        note(comp, "freq", where, f"{value(fw)} vs {value(d)}")
+    return outs
+
+
 # --------------------------------------------------------------------------- checks
 def sweep_calibration(frozen, Xc, yc, Xt, yt_i, base_t, k, where, rng, quick):
     for meth in (CAL_METHODS[:3] if quick else CAL_METHODS):
@@ -341,15 +357,8 @@ def sweep_array_core(p, y, k, where, rng):
         s = np.log(np.clip(p[:, 1], 1e-300, 1)) - np.log(np.clip(p[:, 0], 1e-300, 1))
         s = np.clip(s, -50, 50)
         comp = "decision.search_cutoff"
-        outs = [run(comp, where, decision.search_cutoff, s, y, costs, sample_weight=sw.copy())
-                for sw in ws]
-        cut = [None if o is None else o.cutoff for o in outs]
-        if pairs_differ(cut):
-            note(comp, "wscale", where, f"{cut}")
-        fw = run(comp, where, decision.search_cutoff, s, y, costs, sample_weight=w.copy())
-        d = run(comp, where, decision.search_cutoff, s[dup], y[dup], costs)
-        if d is not None and fw is not None and not same(fw.cutoff, d.cutoff):
-            note(comp, "freq", where, f"{fw.cutoff} vs {d.cutoff}")
+        weight_rules(comp, where, decision.search_cutoff, (s, y, costs), (s[dup], y[dup], costs),
+                     ws, w, lambda o: o.cutoff)
         comp = "decision.cutoff_interval"
         ivs = [run(comp, where, decision.cutoff_interval, s, y, costs, sample_weight=sw.copy(),
                    n_resamples=30, random_state=0) for sw in ws[:2]]
@@ -362,17 +371,9 @@ def sweep_array_core(p, y, k, where, rng):
             n_resamples=30, random_state=0)
         run("decision.guaranteed_cutoff", where, decision.guaranteed_cutoff, s, y, costs,
             requirement="recall", target=0.8)
-        comp = "decision.settle_cutoff"
         pp = p[:, 1]
-        outs = [run(comp, where, decision.settle_cutoff, pp, y, costs, sample_weight=sw.copy())
-                for sw in ws]
-        cut = [None if o is None else o.cutoff for o in outs]
-        if pairs_differ(cut):
-            note(comp, "wscale", where, f"{cut}")
-        fw = run(comp, where, decision.settle_cutoff, pp, y, costs, sample_weight=w.copy())
-        d = run(comp, where, decision.settle_cutoff, pp[dup], y[dup], costs)
-        if d is not None and fw is not None and not same(fw.cutoff, d.cutoff):
-            note(comp, "freq", where, f"{fw.cutoff} vs {d.cutoff}")
+        weight_rules("decision.settle_cutoff", where, decision.settle_cutoff, (pp, y, costs),
+                     (pp[dup], y[dup], costs), ws, w, lambda o: o.cutoff)
     else:
         comp = "decision.tune_class_offsets"
         outs = [run(comp, where, decision.tune_class_offsets, p, y, costs, sample_weight=sw.copy())
@@ -380,18 +381,10 @@ def sweep_array_core(p, y, k, where, rng):
         offs = [None if o is None else getattr(o, "offsets", None) for o in outs]
         if pairs_differ(offs):
             note(comp, "wscale", where, f"{offs}")
-        comp = "decision.settle_class_offsets"
         tuned = outs[0].offsets if outs[0] is not None else np.zeros(k)
-        shares = [None if o is None else o.share for o in (
-            run(comp, where, decision.settle_class_offsets, p, y, costs, tuned,
-                sample_weight=sw.copy()) for sw in ws)]
-        if pairs_differ(shares):
-            note(comp, "wscale", where, f"{shares}")
-        fw = run(comp, where, decision.settle_class_offsets, p, y, costs, tuned,
-                 sample_weight=w.copy())
-        d = run(comp, where, decision.settle_class_offsets, p[dup], y[dup], costs, tuned)
-        if d is not None and fw is not None and fw.share != d.share:
-            note(comp, "freq", where, f"{fw.share} vs {d.share}")
+        weight_rules("decision.settle_class_offsets", where, decision.settle_class_offsets,
+                     (p, y, costs, tuned), (p[dup], y[dup], costs, tuned), ws, w,
+                     lambda o: o.share, equal=lambda a, b: a == b)
 
 
 # --------------------------------------------------------------------------- cost rules
