@@ -607,13 +607,21 @@ def _realised(y, act, c_fn) -> float:
     return float(np.mean((act == 1) & (y == 0)) + c_fn * np.mean((act == 0) & (y == 1)))
 
 
-def cost_sweep(quick: bool, seeds) -> dict:
+def _cost_new_binary_sets(quick: bool):
+    """The binary tasks of :func:`new_data_sets`, the positive class made the minority."""
+    for name, X, y in new_data_sets(quick):
+        y = np.asarray(y)
+        if len(np.unique(y)) == 2:
+            yield name, X, (y == 1).astype(int) if y.mean() <= 0.5 else (y == 0).astype(int)
+
+
+def cost_sweep(quick: bool, seeds, new: bool = False) -> dict:
     from sklearn.metrics import make_scorer
     from sklearn.model_selection import TunedThresholdClassifierCV
 
     rules = ["settled", "least_cost", "sklearn_tuned", "plugin", "half"]
     cells: dict = collections.defaultdict(lambda: collections.defaultdict(list))
-    for dname, X, y in _cost_binary_sets(quick):
+    for dname, X, y in (_cost_new_binary_sets(quick) if new else _cost_binary_sets(quick)):
         X = np.asarray(X, float)
         for seed in seeds:
             rng = np.random.default_rng(100 + seed)
@@ -707,7 +715,7 @@ def _cost_multiclass_sets(quick: bool):
     yield "anes96 PID", d.drop(columns=["PID", "vote"]).to_numpy(float), d["PID"].to_numpy(int)
 
 
-def cost_sweep_multiclass(quick: bool, seeds) -> None:
+def cost_sweep_multiclass(quick: bool, seeds, new: bool = False) -> None:
     """Tuned class offsets (settled toward zero) against the Bayes rule and the argmax.
 
     Errors on true class j cost j + 1. ``tuned`` is CostPolicyWrapper(strategy="tuned") as
@@ -716,7 +724,9 @@ def cost_sweep_multiclass(quick: bool, seeds) -> None:
     from probwrap.decision import tune_class_offsets
 
     cells: dict = collections.defaultdict(lambda: collections.defaultdict(list))
-    for dname, X, y in _cost_multiclass_sets(quick):
+    multi = ([(d, X, y) for d, X, y in new_data_sets(quick) if len(np.unique(y)) > 2] if new
+             else _cost_multiclass_sets(quick))
+    for dname, X, y in multi:
         X = np.asarray(X, float)
         classes, y = np.unique(y, return_inverse=True)
         k = len(classes)
@@ -777,8 +787,9 @@ def main(argv: list[str]) -> None:
     n_seeds = int(argv[argv.index("--seeds") + 1]) if "--seeds" in argv else (1 if quick else 3)
     seeds = range(n_seeds)
     if "--only" in argv and argv[argv.index("--only") + 1] == "cost":
-        cost_sweep(quick, seeds)
-        cost_sweep_multiclass(quick, seeds)
+        new = "--sets" in argv and argv[argv.index("--sets") + 1] == "new"
+        cost_sweep(quick, seeds, new)
+        cost_sweep_multiclass(quick, seeds, new)
         return
     which = argv[argv.index("--sets") + 1] if "--sets" in argv else "all"
     sets = []
@@ -786,6 +797,9 @@ def main(argv: list[str]) -> None:
         sets += [(d, X, y, False) for d, X, y in data_sets(quick)]
     if which in ("all", "new"):
         sets += [(d, X, y, True) for d, X, y in new_data_sets(quick)]
+    if "--skip" in argv:  # comma-separated parts of data-set names to leave out
+        skip = argv[argv.index("--skip") + 1].split(",")
+        sets = [s for s in sets if not any(part in s[0] for part in skip)]
     n_draws = 0
     for dname, X, y, new in sets:
         X = np.asarray(X, float)
@@ -796,7 +810,7 @@ def main(argv: list[str]) -> None:
             idx = rng.permutation(len(y_index))
             if new:
                 # the new sets are small: a quarter trains the model; calibration sets are drawn
-                # from the rest and every other row of the rest (at most 1,500) is a test row
+                # from the rest and every other row of the rest (at most 800) is a test row
                 n_fit = min(len(idx) // 4, 600)
                 fit_rows, rest = idx[:n_fit], idx[n_fit:]
                 test_rows, pool = rest, rest
@@ -818,10 +832,14 @@ def main(argv: list[str]) -> None:
                 frozen = FrozenEstimator(model)
                 source_prior = np.bincount(y_index[fit_rows], minlength=k) / n_fit
                 sizes = (20, 60, 200) if new else (20, 60)
-                for draw, cal in draws(y_index, pool, k, rng, sizes):
+                # the new sets' draws are made before the checks use the generator, so that
+                # one draw can be rebuilt from (data set, seed, model) alone
+                cal_draws = (list(draws(y_index, pool, k, np.random.default_rng([seed, 7]), sizes))
+                             if new else draws(y_index, pool, k, rng, sizes))
+                for draw, cal in cal_draws:
                     n_draws += 1
                     where = f"{dname}|{mname}|seed{seed}|{draw}"
-                    t_rows = test_rows[~np.isin(test_rows, cal)][:1500] if new else test_rows
+                    t_rows = test_rows[~np.isin(test_rows, cal)][:800] if new else test_rows
                     Xt, yt = X[t_rows], y_index[t_rows]
                     base_t = model.predict_proba(Xt)
                     Xc, yc = X[cal].copy(), y_index[cal].copy()
