@@ -372,17 +372,24 @@ def test_one_vs_rest_class_without_rows_keeps_the_models_probability(digits_20, 
     own = forest.predict_proba(X_te)  # scikit-learn's forest: the probabilities to keep
     rows = np.arange(len(y_te))
     on_absent = np.isin(y_te, absent)
-    # Rows of an absent class cost what the forest's own probabilities cost: the floor clip_
-    # (1/100 for 50 trees) and the renormalisation after it move them by at most ~10 %
-    # (10 classes x 0.01); the previous 1/(N + k) = 1/30 cost 3.4 nats per row.
+    # Rows of an absent class cost what the forest's own probabilities cost: only its exact
+    # zeros are raised to clip_ (1/100 for 50 trees); the previous 1/(N + k) = 1/30 cost 3.4
+    # nats per row.
     ours = -np.log(p[rows, y_te])[on_absent].mean()
     theirs = -np.log(np.maximum(own[rows, y_te], 1e-15))[on_absent].mean()
-    assert ours <= theirs + 0.1
-    # the kept probability is the forest's own wherever no floor was applied in the row (a
-    # floored entry ends at clip_ / S <= clip_, S >= 1 the row's sum after the floor)
-    clean = np.all(p > model.clip_, axis=1)
-    assert clean.sum() >= 10
-    np.testing.assert_allclose(p[clean][:, absent], own[clean][:, absent], rtol=1e-9)
+    assert ours <= theirs + 0.02
+    # The kept probability is the forest's own, floored at clip_, in every row where the kept
+    # classes leave the seven calibrated ones at least clip_ each (regression: the floor was
+    # applied to every class and the row renormalised, which moved the kept probability too).
+    floored = np.maximum(own[:, absent], model.clip_)
+    room = floored.sum(axis=1) <= 1 - 7 * model.clip_
+    # (about 30 % of the test rows are of the absent classes; the forest is sure of a third
+    # of them: 0.93 or more for the kept class leaves no room)
+    assert room.mean() > 0.85
+    np.testing.assert_allclose(p[room][:, absent], floored[room], rtol=1e-12)
+    # elsewhere the kept classes are scaled down just enough to leave the others clip_ each
+    np.testing.assert_allclose(p[:, absent].sum(axis=1)[~room], 1 - 7 * model.clip_, rtol=1e-12)
+    clean = np.ones(len(y_te), dtype=bool)
     # the calibrated classes keep the ratios of their one-vs-rest maps' outputs
     ovr = model._one_vs_rest_scores(model._to_scores(own))
     q1 = model.calibrator_[1].predict(model._map_input(model.calibrator_[1], ovr[:, 1]))
