@@ -498,3 +498,46 @@ def test_one_vs_rest_maps_keep_an_accurate_multiclass_model_sharp(digits_60_logi
     # outside comparison: scikit-learn's one-vs-rest sigmoid (Platt's binary targets per
     # class) on the same frozen model and rows loses 0.50 here
     assert log_loss(y_te, p) < _sklearn_loss(model, X_cal, y_cal, X_te, y_te, "sigmoid")
+
+
+# --------------------------------------------------------------------------- tiny multiclass
+_TINY_METHODS = ["auto", "temperature", "vector_scaling", "matrix_scaling", "identity", *METHODS]
+
+
+@pytest.mark.parametrize("method", _TINY_METHODS)
+def test_wrapper_strictly_inside_zero_one_on_tiny_separated_multiclass_sets(method):
+    # Property over random tiny calibration sets of 4 classes (0 to 3 rows per class, at least
+    # two classes present) from a model whose outputs are exact one-hot rows for the true class
+    # (the scores separate the classes, with exact 0 and 1) or soft rows: every method keeps
+    # every probability strictly inside (0, 1), also for an absent class and for one-hot test
+    # rows of every class, and rows sum to one.
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+
+    k = 4
+    soft = np.array([[0.7, 0.1, 0.1, 0.1], [0.25, 0.25, 0.25, 0.25]])
+    test_rows = np.vstack([np.eye(k), soft, np.eye(k)[::-1]])
+
+    @settings(max_examples=12, deadline=None, derandomize=True)
+    @given(st.lists(st.integers(0, 3), min_size=k, max_size=k).filter(
+        lambda c: sum(v > 0 for v in c) >= 2), st.integers(0, 2**16))
+    def check(counts, seed):
+        y = np.repeat(np.arange(k), counts)
+        rng = np.random.default_rng(seed)
+        table = np.eye(k)[y]
+        # one calibration row in three gets a soft, still right-ranked output
+        soft_rows = rng.random(len(y)) < 1 / 3
+        table[soft_rows] = 0.4 * table[soft_rows] + 0.15
+        table = np.vstack([table, test_rows])
+        X = np.arange(len(table)).reshape(-1, 1)
+        model = _Table(table).fit(X, np.arange(len(table)) % k)  # classes_ = 0..3
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            fitted = CalibrationWrapper(FrozenEstimator(model), method=method, random_state=0)
+            fitted.fit(X[: len(y)], y)
+        p = fitted.predict_proba(X[len(y):])
+        assert np.all(np.isfinite(p))
+        assert p.min() > 0.0 and p.max() < 1.0, (method, counts)
+        np.testing.assert_allclose(p.sum(axis=1), 1.0, rtol=1e-12)
+
+    check()
