@@ -133,3 +133,43 @@ def test_venn_abers_compact_pairs_equal_two_isotonic_fits_per_test_score():
             pair.append(ref.predict([t])[0])
         # 1e-12: the order of summation inside the two PAV implementations
         np.testing.assert_allclose(got[j], pair, atol=1e-12)
+
+
+def test_row_reductions_equal_numpy_bit_for_bit():
+    # consistency test: the column loops behind the prediction fast path (issue 16, point 6)
+    # against NumPy's own reductions, for every number of columns either side of the cut-over
+    from probwrap._validation import row_max, row_sum
+
+    rng = np.random.default_rng(16)
+    for k in range(1, 11):
+        for order in "CF":
+            for dtype in (np.float64, np.float32):
+                a = np.asarray(rng.random((257, k)) * 10.0 ** rng.integers(-8, 8, (257, k)),
+                               dtype=dtype, order=order)
+                a[3, 0] = np.nan
+                a[5, -1] = -0.0
+                for keep in (False, True):
+                    for ours, ref in ((row_sum(a, keep), a.sum(axis=1, keepdims=keep)),
+                                      (row_max(a, keep), a.max(axis=1, keepdims=keep))):
+                        assert ours.dtype == ref.dtype and ours.shape == ref.shape
+                        np.testing.assert_array_equal(ours, ref)
+                        assert np.array_equal(np.signbit(ours), np.signbit(ref))
+
+
+def test_check_proba_fast_path_keeps_its_messages():
+    import pytest
+
+    from probwrap._validation import check_proba
+
+    good = np.array([[0.2, 0.8], [1.0, 0.0]])
+    assert check_proba(good, ndim=2) is not None
+    for bad, message in (
+        ([[np.nan, 1.0]], "contains NaN or infinite values"),
+        ([[np.inf, 0.0]], "contains NaN or infinite values"),
+        ([[-0.1, 1.1]], r"in \[0, 1\]; got values from -0.1 to 1.1"),
+        ([[0.2, 0.7], [0.5, 0.5]], "row 0 sums to 0.9"),
+        ([[0.5, 0.5], [0.5, 0.5 + 2e-6]], "row 1 sums to 1"),
+    ):
+        with pytest.raises(ValueError, match=message):
+            check_proba(np.array(bad), name="proba")
+    check_proba(np.array([[0.5, 0.5 + 5e-7]]))  # within the 1e-6 tolerance
