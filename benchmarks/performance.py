@@ -30,6 +30,7 @@ from sklearn.isotonic import IsotonicRegression
 from sklearn.linear_model import LogisticRegression
 
 from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
+from probwrap._heldout import PREDICT_CHUNK_ROWS
 from probwrap.calibration import IsotonicMap, VennAbersMap
 from probwrap.decision import search_cutoff
 
@@ -290,12 +291,14 @@ def cutoff(n: int) -> None:
         lambda: CostPolicyWrapper(model, costs={"fp": 1, "fn": 6}, strategy="tuned").fit(X, yy)
     ) / (8 * n)
     mem_model = peak_memory(lambda: model.predict_proba(X)) / (8 * n)
+    blocks = n > 2 * PREDICT_CHUNK_ROWS
     record("7", f"CostPolicyWrapper(strategy='tuned').fit peak memory / scores, {n:.0e} rows",
            mem, "<= 4", mem <= 4,
-           "" if mem <= 4 else f"the model's own predict_proba peaks at {mem_model:.2f}x, "
-           "which no wrapper around it can go below; the fit adds the labels as one-byte codes "
-           "during that call, and afterwards holds the positive-class column and those codes "
-           "(1.1x) under a search that builds only the kept points of the curve (2.1x)")
+           (f"the model's own predict_proba on all rows peaks at {mem_model:.2f}x; "
+            + (f"the fit calls it on blocks of {PREDICT_CHUNK_ROWS} rows into one output array"
+               if blocks else f"at most {2 * PREDICT_CHUNK_ROWS} rows are predicted in one call")
+            + "; then the positive-class column and one-byte labels (1.1x) under the search "
+            "(kept curve points only), the settling step and the interval's tally"))
 
 
 def main() -> None:

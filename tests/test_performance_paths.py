@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 from scipy.optimize import isotonic_regression
 from scipy.special import expit
 from sklearn.isotonic import IsotonicRegression
@@ -157,7 +158,6 @@ def test_row_reductions_equal_numpy_bit_for_bit():
 
 
 def test_check_proba_fast_path_keeps_its_messages():
-    import pytest
 
     from probwrap._validation import check_proba
 
@@ -173,3 +173,47 @@ def test_check_proba_fast_path_keeps_its_messages():
         with pytest.raises(ValueError, match=message):
             check_proba(np.array(bad), name="proba")
     check_proba(np.array([[0.5, 0.5 + 5e-7]]))  # within the 1e-6 tolerance
+
+
+def test_frozen_model_predicted_in_row_blocks_gives_the_one_call_result(monkeypatch):
+    # consistency test: CostPolicyWrapper.fit predicts a large held-out array block by block
+    # (issue 16, point 7 memory); for scikit-learn's models the rows come out bit for bit as in
+    # one call, and the fitted wrapper is the same
+    import warnings
+
+    from sklearn.discriminant_analysis import LinearDiscriminantAnalysis
+    from sklearn.ensemble import HistGradientBoostingClassifier, RandomForestClassifier
+    from sklearn.frozen import FrozenEstimator
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.naive_bayes import GaussianNB
+    from sklearn.neural_network import MLPClassifier
+
+    import probwrap._heldout as heldout
+    from probwrap import CostPolicyWrapper
+
+    rng = np.random.default_rng(7)
+    X = rng.normal(size=(5000, 6))
+    y = (X[:, 0] + rng.normal(size=5000) > 0.5).astype(int)
+    models = [LogisticRegression(), HistGradientBoostingClassifier(max_iter=10),
+              RandomForestClassifier(n_estimators=5, max_depth=5, random_state=0), GaussianNB(),
+              LinearDiscriminantAnalysis(), MLPClassifier(hidden_layer_sizes=(8,), max_iter=30,
+                                                          random_state=0)]
+    for model in models:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            model.fit(X[:1000], y[:1000])
+        whole = model.predict_proba(X)
+        monkeypatch.setattr(heldout, "PREDICT_CHUNK_ROWS", 700)  # 8 blocks, the last short
+        blocks = heldout._predict_in_chunks(model.predict_proba, X)
+        np.testing.assert_array_equal(blocks, whole)
+        fitted = CostPolicyWrapper(FrozenEstimator(model), costs={"fp": 1, "fn": 4},
+                                   strategy="tuned").fit(X, y)
+        monkeypatch.setattr(heldout, "PREDICT_CHUNK_ROWS", 65_536)  # one call
+        single = CostPolicyWrapper(FrozenEstimator(model), costs={"fp": 1, "fn": 4},
+                                   strategy="tuned").fit(X, y)
+        assert fitted.cutoff_ == single.cutoff_
+        assert fitted.heldout_cost_ == single.heldout_cost_
+        # heldout_cost_ is the mean cost of the rule predict applies, on the same rows
+        flagged = fitted.predict(X) == 1
+        cost = np.where(flagged, np.where(y == 1, 0.0, 1.0), np.where(y == 1, 4.0, 0.0))
+        assert fitted.heldout_cost_ == pytest.approx(cost.mean(), rel=1e-12)

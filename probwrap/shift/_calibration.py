@@ -7,7 +7,15 @@ from typing import Any
 import numpy as np
 from scipy.optimize import minimize
 
-from .._validation import check_labels, check_same_length, check_sample_weight, check_scores, plain, row_max, row_sum
+from .._validation import (
+    check_labels,
+    check_same_length,
+    check_sample_weight,
+    check_scores,
+    plain,
+    row_max,
+    row_sum,
+)
 from ..calibration._logodds import proba_to_log_proba
 
 __all__ = ["BiasCorrectedScaling"]
