@@ -179,6 +179,24 @@ def test_inputs_are_not_modified(cls, data):
 
 
 @pytest.mark.filterwarnings("ignore::UserWarning")
+@SETTINGS
+@given(data=multiclass_data())
+def test_temperature_multiclass_inputs_are_not_modified(data):
+    # read-only inputs, and single rows (whose transpose is already contiguous, so an in-place
+    # softmax over it would write through to the caller's array)
+    z, y, w = data
+    copies = [z.copy(), y.copy(), w.copy()]
+    for arr in (z, y, w):
+        arr.setflags(write=False)  # any write would raise
+    m = TemperatureMap().fit(z, y, sample_weight=w)
+    for rows in (z, z[:1], z[-1:]):
+        q = m.predict(rows)
+        np.testing.assert_allclose(q.sum(axis=1), 1.0)
+    for arr, ref in zip((z, y, w), copies, strict=True):
+        np.testing.assert_array_equal(arr, ref)
+
+
+@pytest.mark.filterwarnings("ignore::UserWarning")
 @pytest.mark.parametrize("cls", ALL_MAPS)
 @settings(max_examples=10, deadline=None)
 @given(data=binary_data())

@@ -25,6 +25,13 @@ _OUTPUT_FLOOR = 1e-15
 #: parameters (on standardised scores) beyond this size mean the fit ran off toward infinity
 _RUNAWAY = 30.0
 
+#: vector scaling takes its last Newton step, unchecked, once the Newton decrement (about twice
+#: the distance of the objective from its minimum) is below this
+_LAST_STEP_DECREMENT = 1e-12
+
+#: ... and takes full Newton steps without a line search once it is below this
+_FULL_STEP_DECREMENT = 1e-10
+
 
 def _as_columns(scores: np.ndarray) -> np.ndarray:
     """Binary log-odds ``s`` (n,) -> two logit columns ``[-s/2, s/2]`` whose softmax is sigmoid(s)."""
@@ -32,13 +39,6 @@ def _as_columns(scores: np.ndarray) -> np.ndarray:
         half = 0.5 * scores
         return np.column_stack([-half, half])
     return scores
-
-
-def _score_scale(z: np.ndarray, wn: np.ndarray) -> float:
-    """Weighted root-mean-square of the row-centred scores (1.0 when they are all constant)."""
-    centred = z - z.mean(axis=1, keepdims=True)
-    scale = float(np.sqrt(wn @ np.mean(centred**2, axis=1)))
-    return scale if scale > 0.0 and np.isfinite(scale) else 1.0
 
 
 def _smoothed_targets(y: np.ndarray, w: np.ndarray, k: int, smooth: bool) -> np.ndarray:
@@ -77,52 +77,92 @@ def _log_softmax(eta: np.ndarray) -> np.ndarray:
     return shifted - np.log(np.exp(shifted).sum(axis=1, keepdims=True))
 
 
-def _vector_hessian(
-    theta: np.ndarray, x: np.ndarray, wn: np.ndarray, lam: float, pull: float
-) -> np.ndarray:
-    """Hessian of the vector-scaling objective in ``(a, b)``.
+def _vector_newton(
+    xt: np.ndarray, tw: np.ndarray, wn: np.ndarray, lam: float, scale: float, max_iter: int = 200
+) -> tuple[np.ndarray, float, float]:
+    """Minimise the vector-scaling objective by damped Newton steps; returns ``(theta, f, g)``.
 
-    Per row the Hessian of the log loss in the logits is ``diag(q) - q q^T``; the logit of
-    class ``j`` is ``a_j x_j + b_j``, so the blocks are weighted sums of ``x x^T``, ``x`` and 1
-    against it. The penalty adds ``2 lam (I - (1 - pull) 11^T / k)`` for ``a`` and ``2 lam I``
-    for ``b``.
+    ``xt`` holds the standardised scores with one row per class (shape (k, n)), ``tw`` the
+    weighted targets ``wn * t`` in the same layout and ``theta = (a, b)``. Each evaluation makes
+    one pass of exponentials over the scores; its probabilities ``q`` also give the Hessian, so
+    an accepted step costs one pass (the previous solver's objective and Hessian made two
+    log-softmax passes each). Per row the Hessian of the log loss in the logits is
+    ``diag(q) - q q^T``; the logit of class ``j`` is ``a_j x_j + b_j``, so the blocks are
+    weighted sums of ``x x^T``, ``x`` and 1 against it, one (2k, n) by (n, 2k) product. The
+    penalty adds ``2 lam (I - (1 - pull) 11^T / k)`` for ``a`` and ``2 lam I`` for ``b``.
+    Returns the parameters, the objective there and its largest gradient entry.
     """
-    k = x.shape[1]
-    a, b = theta[:k], theta[k:]
-    q = np.exp(_log_softmax(x * a + b))
-    wq = wn[:, None] * q
-    qx = q * x
-    wqx = wq * x
-    h_aa = np.diag(np.sum(wqx * x, axis=0)) - qx.T @ (wn[:, None] * qx)
-    h_ab = np.diag(np.sum(wqx, axis=0)) - qx.T @ wq
-    h_bb = np.diag(np.sum(wq, axis=0)) - q.T @ wq
-    center = np.eye(k) - (1.0 - pull) / k
-    return np.block([[h_aa + 2.0 * lam * center, h_ab], [h_ab.T, h_bb + 2.0 * lam * np.eye(k)]])
+    k = xt.shape[0]
+    pull = _IDENTITY_PULL
+    penalty_hessian = np.zeros((2 * k, 2 * k))
+    penalty_hessian[:k, :k] = 2.0 * lam * (np.eye(k) - (1.0 - pull) / k)
+    penalty_hessian[k:, k:] = 2.0 * lam * np.eye(k)
+    idx = np.arange(k)
+    tw_flat = tw.ravel()
 
+    def evaluate(theta):
+        a, b = theta[:k], theta[k:]
+        eta = xt * a[:, None]
+        eta += b[:, None]
+        eta -= eta.max(axis=0)
+        q = np.exp(eta)
+        s = q.sum(axis=0)
+        # rows of the targets sum to one, so the shift by the row maximum cancels in the loss
+        loss = float(wn @ np.log(s)) - float(tw_flat @ eta.ravel())
+        q /= s
+        r = q * wn
+        r -= tw  # d loss / d eta
+        dev = a - a.mean()
+        common = a.mean() - scale  # the identity map has a = scale on standardised scores
+        penalty = float(dev @ dev + pull * k * common**2 + b @ b)
+        grad = np.concatenate([
+            np.einsum("ij,ij->i", r, xt) + 2.0 * lam * (dev + pull * common),
+            r.sum(axis=1) + 2.0 * lam * b,
+        ])
+        return loss + lam * penalty, grad, q
 
-def _newton(objective, hessian, theta: np.ndarray, max_iter: int = 200) -> tuple[np.ndarray, float]:
-    """Damped Newton's method (backtracking on the objective) for a smooth convex objective.
+    def hessian(q):
+        u = np.concatenate([q * xt, q])  # (2k, n): d eta / d theta, times q
+        v = u * wn
+        h = penalty_hessian - v @ u.T
+        h[idx, idx] += np.einsum("ij,ij->i", v[:k], xt)
+        diag_ab = v[:k].sum(axis=1)
+        h[idx, k + idx] += diag_ab
+        h[k + idx, idx] += diag_ab
+        h[k + idx, k + idx] += v[k:].sum(axis=1)
+        return h
 
-    Returns the parameters and the largest gradient entry at the end.
-    """
-    f, g = objective(theta)
-    eye = np.eye(theta.shape[0])
+    theta = np.concatenate([np.full(k, scale), np.zeros(k)])  # start at the identity map
+    f, g, q = evaluate(theta)
+    eye = np.eye(2 * k)
     for _ in range(max_iter):
-        step = np.linalg.solve(hessian(theta) + 1e-12 * eye, g)
+        step = np.linalg.solve(hessian(q) + 1e-12 * eye, g)
         decrement = float(g @ step)
-        if decrement < 1e-24 or np.max(np.abs(g)) < 1e-14:
+        small = np.max(np.abs(step)) < 1e-6 * (1.0 + np.max(np.abs(theta)))
+        if (decrement < _LAST_STEP_DECREMENT and small) or np.max(np.abs(g)) < 1e-14:
+            # quadratic convergence: this last full step leaves a decrement and a step of the
+            # order of their squares, below what doubles resolve; no evaluation needed (the
+            # step size condition keeps flat, nearly separable fits iterating)
+            theta = theta - step
             break
+        if decrement < _FULL_STEP_DECREMENT:
+            # near the minimum the objective changes by less than its rounding can resolve
+            # reliably, so a line search on it would only stall: full Newton steps
+            theta = theta - step
+            f, g, q = evaluate(theta)
+            continue
         lr = 1.0
         while True:
             cand = theta - lr * step
-            f1, g1 = objective(cand)
-            if f1 <= f - 1e-4 * lr * decrement or lr < 1e-10:
+            f1, g1, q1 = evaluate(cand)
+            if f1 <= f - 1e-4 * lr * decrement:
                 break
             lr *= 0.5
-        if f1 > f:  # no decrease possible in floating point: at the minimum to precision
-            break
-        theta, f, g = cand, f1, g1
-    return theta, float(np.max(np.abs(g)))
+            if lr < 1e-10:
+                # no decrease possible in floating point: at the minimum to precision
+                return theta, f, float(np.max(np.abs(g)))
+        theta, f, g, q = cand, f1, g1, q1
+    return theta, f, float(np.max(np.abs(g)))
 
 
 def _check_settings(m: CalibrationMap) -> None:
@@ -150,11 +190,19 @@ def _fit_linear_softmax(
     n, k = z.shape
     total = float(w.sum())
     wn = w / total
-    scale = _score_scale(z, wn)
-    x = z / scale
+    # one row per class: the reductions over the classes of a row then run along contiguous
+    # memory (with rows of k entries they are several times slower)
+    zt = np.ascontiguousarray(z.T)
+    centred = zt - zt.mean(axis=0)
+    scale = float(np.sqrt(wn @ np.mean(centred**2, axis=0)))
+    if not (scale > 0.0 and np.isfinite(scale)):
+        scale = 1.0
+    constant_rows = not np.any(centred)
+    xt = zt / scale
     t = _smoothed_targets(y, w, k, smooth)
     lam = shrinkage / total  # the penalty per unit of weight, as the loss is a weighted mean
     diag = np.arange(k)
+    x = xt.T  # (n, k) view for the matrix-scaling objective
 
     def unpack(theta):
         if full:
@@ -194,10 +242,10 @@ def _fit_linear_softmax(
             options={"maxiter": 5000, "ftol": 1e-15, "gtol": 1e-11},
         )
         theta, grad_norm, note = res.x, float(np.max(np.abs(res.jac))), str(res.message)
+        f_end = objective(theta)[0]
     else:
-        theta, grad_norm = _newton(
-            objective, lambda th: _vector_hessian(th, x, wn, lam, _IDENTITY_PULL), theta0
-        )
+        tw = np.ascontiguousarray(t.T) * wn
+        theta, f_end, grad_norm = _vector_newton(xt, tw, wn, lam, scale)
         note = "Newton iterations reached their limit"
     if not np.all(np.isfinite(theta)):  # pragma: no cover - the objective is convex and smooth
         raise ValueError(f"{name}: the fit did not give finite parameters.")
@@ -205,13 +253,12 @@ def _fit_linear_softmax(
     A, b = unpack(theta)
     separated = False
     if not smooth:
-        eta = (x @ A.T if full else x * A) + b
+        eta = (A @ xt if full else xt * A[:, None]) + b[:, None]  # (k, n)
         rows = np.arange(n)
-        true = eta[rows, y]
-        others = eta.copy()
-        others[rows, y] = -np.inf
+        true = eta[y, rows]
+        eta[y, rows] = -np.inf
         live = w > 0
-        separated = bool(np.all(true[live] > others[live].max(axis=1)))
+        separated = bool(np.all(true[live] > eta.max(axis=0)[live]))
     if separated and shrinkage > 0:
         # every calibration row is ranked first for its own class: only the weak pull keeps
         # the fit finite and it would be confidently extreme; refit with smoothed targets
@@ -229,7 +276,7 @@ def _fit_linear_softmax(
             z, y, w, full=full, shrinkage=shrinkage, smooth=True, name=name
         )
         return A_s, b_s, reason
-    if separated or np.max(np.abs(theta)) > _RUNAWAY or objective(theta)[0] < 1e-9:
+    if separated or np.max(np.abs(theta)) > _RUNAWAY or f_end < 1e-9:
         boundary = (
             "the scores separate the classes and the likelihood has no finite maximum (fitted "
             f"parameters up to {np.max(np.abs(theta)):.3g} on standardised scores)"
@@ -253,7 +300,7 @@ def _fit_linear_softmax(
             stacklevel=4,
         )
     A, b = unpack(theta)
-    if not np.any(x - x.mean(axis=1, keepdims=True)):
+    if constant_rows:
         # no score varies within a row: the scales have no effect on the fitted rows; zero
         # them so that new scores cannot give confident outputs the data never supported
         A = np.zeros_like(A)

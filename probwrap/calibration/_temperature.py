@@ -89,6 +89,8 @@ def _slope_and_curvature(
     ``target`` is :func:`_target_scores` (it does not depend on ``beta``). The derivative is
     ``beta * sum wn * Var_q(z)``: the variance of the scores under the model's probabilities.
     ``prior = (lam, beta0)`` adds the slope of the penalty of :func:`_prior_slope`.
+    Multiclass ``scores`` come with one row per class, shape (k, n): the sums over the classes
+    of a row then run along contiguous memory (several times faster than along rows of k).
     """
     beta = np.exp(log_beta)
     extra_g, extra_d = _prior_slope(beta, *prior)
@@ -97,10 +99,14 @@ def _slope_and_curvature(
         sq = scores * q
         return (float(wn @ (sq - target)) + extra_g,
                 float(beta * (wn @ (sq * scores * (1.0 - q)))) + extra_d)
-    q = softmax(beta * scores, axis=1)
-    qz = q * scores
-    mean = qz.sum(axis=1)
-    var = np.maximum(np.einsum("ij,ij->i", qz, scores) - mean**2, 0.0)
+    q = beta * scores
+    q -= q.max(axis=0)
+    np.exp(q, out=q)
+    q /= q.sum(axis=0)  # the softmax over the classes of each row
+    q *= scores
+    mean = q.sum(axis=0)
+    q *= scores
+    var = np.maximum(q.sum(axis=0) - mean**2, 0.0)
     return float(wn @ (mean - target)) + extra_g, float(beta * (wn @ var)) + extra_d
 
 
@@ -172,12 +178,13 @@ def _valid_shrinkage(value: object) -> float:
 
 
 def _rms_scale(scores: np.ndarray, wn: np.ndarray) -> float:
-    """Weighted root-mean-square of the row-centred logits; binary log-odds ``s`` count as the
-    two logits ``[-s/2, s/2]`` (the same map as a two-column input)."""
+    """Weighted root-mean-square of the row-centred logits, given one row per class (k, n);
+    binary log-odds ``s`` (n,) count as the two logits ``[-s/2, s/2]`` (the same map as a
+    two-column input)."""
     if scores.ndim == 1:
         square = 0.25 * scores**2
     else:
-        square = np.mean((scores - scores.mean(axis=1, keepdims=True)) ** 2, axis=1)
+        square = np.mean((scores - scores.mean(axis=0)) ** 2, axis=0)
     return float(np.sqrt(wn @ square))
 
 
@@ -305,6 +312,9 @@ class TemperatureMap(CalibrationMap):
         scores = scores / unit
         w = w / power_of_two_unit(w)
         wn = w / w.sum()
+        target = _target_scores(scores, y, counts)
+        if scores.ndim == 2:
+            scores = np.ascontiguousarray(scores.T)  # one row per class (see the slope)
         scale = _rms_scale(scores, wn)
         if scale == 0.0:
             # every score is the same (per row): the temperature has no effect on the output
@@ -312,7 +322,6 @@ class TemperatureMap(CalibrationMap):
             return
         # search log(beta) = -log(T) within exp(+-_LOG_SPAN) of 1 / scale, the prior's mode
         lo, hi = -np.log(scale) - _LOG_SPAN, -np.log(scale) + _LOG_SPAN
-        target = _target_scores(scores, y, counts)
         log_beta, end = _root_log_beta(
             scores, target, wn, lo, hi, -np.log(scale), (lam, 1.0 / scale)
         )
@@ -346,5 +355,10 @@ class TemperatureMap(CalibrationMap):
         with np.errstate(over="ignore", divide="ignore"):
             if scores.ndim == 1:
                 return expit(scores / self.temperature_)
-            shifted = scores - scores.max(axis=1, keepdims=True)
-            return softmax(shifted / self.temperature_, axis=1)
+            # one row per class: the sums over a row's classes run along contiguous memory
+            shifted = scores.T.copy()  # (a copy: the operations below are in place)
+            shifted -= shifted.max(axis=0)
+            shifted /= self.temperature_
+            np.exp(shifted, out=shifted)
+            shifted /= shifted.sum(axis=0)
+            return shifted.T
