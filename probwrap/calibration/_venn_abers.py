@@ -186,6 +186,10 @@ class VennAbersMap(CalibrationMap):
     ``p1 / (1 - p0 + p1)``, the paper's merge for log loss. The merged value is never exactly 0
     or 1: below all calibration scores ``p0 = 0`` and ``p1 >= 1 / (N + 1)``, so the merge is at
     least ``1 / (N + 2)`` (``N`` the total weight), the floor the other maps apply explicitly.
+    Fitted one-vs-rest for one of ``k`` classes (through ``CalibrationWrapper``), the merge uses
+    ``p0 + (p1 - p0) / (k - 1)`` in place of ``p1``: the ``k - 1`` wrong classes of a row share
+    one width instead of keeping ``k - 1`` widths together (docs/calibration.md, "One-vs-rest
+    with k classes"); the interval is the paper's either way.
 
     Efficiency: nothing is refitted per test point. After one sort, the values for every
     possible insertion (at each distinct calibration score and in each gap between two) are
@@ -294,4 +298,16 @@ class VennAbersMap(CalibrationMap):
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
         pair = self._interval(scores)
-        return pair[:, 1] / (1.0 - pair[:, 0] + pair[:, 1])
+        p0, p1 = pair[:, 0], pair[:, 1]
+        # The merge weighs "the test row is positive" (upper probability p1) against "it is
+        # negative" (upper probability 1 - p0). Fitted one-vs-rest for one of k classes
+        # (``_rest_classes = k - 1``, see one_vs_rest_copy), each of the k maps adds its own
+        # width p1 - p0 for the hypothesis that the row is its class; the k hypotheses exclude
+        # each other, yet after renormalisation the k - 1 wrong classes of a row would keep
+        # k - 1 widths together. So each map uses 1 / (k - 1) of its width above p0, and the
+        # wrong classes together keep about what the one wrong class of a binary map keeps
+        # (the floor below all scores becomes 1 / ((N + 1)(k - 1) + 1), of the order of the
+        # other maps' shared floor 1 / ((N + 2)(k - 1))). Two classes: the paper's merge.
+        # The interval itself (predict_interval) is not changed.
+        p1 = p0 + (p1 - p0) / self._rest_classes
+        return p1 / (1.0 - p0 + p1)
