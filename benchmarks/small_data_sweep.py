@@ -64,11 +64,15 @@ from probwrap import (  # noqa: E402
 CAL_METHODS = ["auto", "platt", "isotonic", "beta", "temperature", "binning", "venn_abers"]
 HARM_LIMIT = 1.10
 MIN_TEST_FOR_HARM = 200
+MIN_TEST_SMALL = 100  # the new, smaller sets: 100-199 test rows are counted apart
+# probwrap's explicit maps beside scikit-learn's CalibratedClassifierCV method of the same kind
+SK_SAME = {"platt": "sigmoid", "isotonic": "isotonic", "temperature": "temperature"}
 CLEAR = re.compile(r"`[^`]+`")
 
 problems: collections.Counter = collections.Counter()
 examples: dict = {}
 components: set = set()
+ratios: dict = collections.defaultdict(list)  # (component, kind) -> test log-loss ratios
 
 
 def note(component: str, kind: str, where: str, detail: str = "") -> None:
@@ -120,14 +124,21 @@ def test_log_loss(y_index, p) -> float:
     return float(-np.mean(np.log(np.clip(p[np.arange(len(y_index)), y_index], 1e-15, 1))))
 
 
-def check_harm(component, where, y_index, p, base):
+def check_harm(component, where, y_index, p, base, kind="harm", against="base"):
+    """Note test log loss above HARM_LIMIT x that of ``base`` (the base model's probabilities,
+    or scikit-learn's comparable method with ``kind="vs_sk"``). Test sets of 100-199 rows are
+    counted apart (``kind + "<200"``): noisier."""
     # only on random draws: the rare/lowprev draws change the class shares on purpose, so a
     # map fitted on them is fitted to another prevalence than the test rows'
-    if p is None or len(y_index) < MIN_TEST_FOR_HARM or not where.split("|")[-1].startswith("n"):
+    if (p is None or base is None or len(y_index) < MIN_TEST_SMALL
+            or not where.split("|")[-1].startswith("n")):
         return
     r = test_log_loss(y_index, p) / max(test_log_loss(y_index, base), 1e-12)
+    ratios[(component, kind)].append(r)
     if r > HARM_LIMIT:
-        note(component, "harm", where, f"log loss {r:.2f} x base")
+        tier = "" if len(y_index) >= MIN_TEST_FOR_HARM else "<200"
+        note(component, kind + tier, where,
+             f"log loss {r:.2f} x {against} ({len(y_index)} test rows)")
 
 
 def same(a, b) -> bool:
@@ -141,6 +152,7 @@ def same(a, b) -> bool:
 
 # --------------------------------------------------------------------------- data
 def data_sets(quick: bool):
+    """The data sets of the first sweep: (name, X, y)."""
     X, y = load_iris(return_X_y=True)
     yield "iris", X, y
     X, y = load_breast_cancer(return_X_y=True)
@@ -155,16 +167,98 @@ def data_sets(quick: bool):
         yield "statsmodels " + name.split(":")[0].split()[-1] + name.split(":")[1][:12], X, y
 
 
+def _above(values, q: float) -> np.ndarray:
+    """1 where ``values`` lie above their ``q``-quantile: a minority share of about 1 - q."""
+    values = np.asarray(values, float)
+    return (values > np.quantile(values, q)).astype(int)
+
+
+def _numeric(frame) -> np.ndarray:
+    """A feature table as floats: categorical columns one-hot coded (first level dropped)."""
+    import pandas as pd
+
+    return pd.get_dummies(frame, drop_first=True, dtype=float).to_numpy(float)
+
+
+def new_data_sets(quick: bool):
+    """Bundled data sets the first sweep did not use: (name, X, y), the target named in the name.
+
+    scikit-learn's diabetes (442 rows; disease progression a year later binarised at its 50 %,
+    75 % and 90 % quantiles and cut into tertiles), statsmodels' engel (235 households; food
+    share of income in the top quarter), grunfeld (220 firm-years; investment in the top third,
+    from firm value, capital stock and year), macrodata (202 quarters; next quarter's real GDP
+    growth in the bottom fifth, from this quarter's growth rates, inflation, unemployment and
+    interest rates), cancer (301 counties; cancer rate above its median, from population — a weak
+    model), sunspots (306 years; activity above its median from the three years before) and
+    fertility (194 countries; fertility rate in 2010 above 3 births, from the rates of 1960-1990),
+    and scikit-survival's bundled whas500 (500 heart-attack patients: death during follow-up,
+    43 %), gbsg2 (686: recurrence, 44 %), aids (1,151: AIDS or death, 8 %) and flchain (7,874:
+    death, 28 %) — all shipped inside the packages, none downloaded. The statsmodels sets of
+    fewer than 150 rows (spector, scotland, ccard, heart, strikes, ...) are too small to train,
+    calibrate and test on; :func:`score_file_sets` uses them as score files for the command line.
+    """
+    import statsmodels.api as sm
+    from sklearn.datasets import load_diabetes
+
+    X, t = load_diabetes(return_X_y=True)
+    yield "diabetes progression>q50", X, _above(t, 0.5)
+    yield "diabetes progression>q75", X, _above(t, 0.75)
+    if quick:
+        return
+    yield "diabetes progression>q90", X, _above(t, 0.9)
+    yield "diabetes progression tertile", X, np.digitize(t, np.quantile(t, [1 / 3, 2 / 3]))
+    d = sm.datasets.engel.load_pandas().data
+    yield "engel food share top quarter", d[["income"]].to_numpy(float), _above(
+        d["foodexp"] / d["income"], 0.75)
+    d = sm.datasets.grunfeld.load_pandas().data
+    yield "grunfeld invest top third", d[["value", "capital", "year"]].to_numpy(float), _above(
+        d["invest"], 2 / 3)
+    d = sm.datasets.macrodata.load_pandas().data
+    growth = np.log(d[["realgdp", "realcons", "realinv", "realgovt", "realdpi", "m1"]]).diff()
+    feats = np.column_stack([growth.to_numpy(), d[["infl", "unemp", "tbilrate", "realint"]]])
+    nxt = growth["realgdp"].shift(-1).to_numpy()
+    keep = np.isfinite(feats).all(1) & np.isfinite(nxt)
+    yield "macrodata gdp growth next q low fifth", feats[keep], (
+        nxt[keep] < np.quantile(nxt[keep], 0.2)).astype(int)
+    d = sm.datasets.cancer.load_pandas().data
+    yield "cancer rate>median", np.log(d[["population"]].to_numpy(float)), _above(
+        d["cancer"] / d["population"], 0.5)
+    a = sm.datasets.sunspots.load_pandas().data["SUNACTIVITY"].to_numpy(float)
+    lags = np.column_stack([a[2:-1], a[1:-2], a[:-3]])
+    yield "sunspots activity>median", lags, _above(a[3:], 0.5)
+    d = sm.datasets.fertility.load_pandas().data
+    cols = [str(y) for y in range(1960, 1991, 5)]
+    d = d.dropna(subset=cols + ["2010"])
+    yield "fertility 2010>3", d[cols].to_numpy(float), (d["2010"] > 3).astype(int).to_numpy()
+    import sksurv.datasets as ss
+
+    for loader, event, label in ((ss.load_whas500, "fstat", "whas500 death"),
+                                 (ss.load_gbsg2, "cens", "gbsg2 recurrence"),
+                                 (ss.load_aids, "censor", "aids event (8%)"),
+                                 (ss.load_flchain, "death", "flchain death")):
+        Xf, yf = loader()
+        Xf = Xf.copy()
+        for c in Xf.columns:  # flchain has missing values in a few columns
+            if Xf[c].dtype.kind == "f":
+                Xf[c] = Xf[c].fillna(Xf[c].median())
+        yield label, _numeric(Xf), yf[event].astype(int)
+
+
 def base_models(quick: bool, seed: int):
+    from sklearn.ensemble import HistGradientBoostingClassifier
+    from sklearn.linear_model import LogisticRegression
+
     yield "naive_bayes", GaussianNB()
     yield "forest", RandomForestClassifier(n_estimators=50, random_state=seed)
     if not quick:
         yield "svm_margins", make_pipeline(StandardScaler(), LinearSVC())
+        yield "boosting", HistGradientBoostingClassifier(max_iter=100, random_state=seed)
+        yield "logistic", make_pipeline(StandardScaler(), LogisticRegression(max_iter=5000))
 
 
-def draws(y_index: np.ndarray, pool: np.ndarray, k: int, rng):
+def draws(y_index: np.ndarray, pool: np.ndarray, k: int, rng, sizes=(20, 60)):
     """(name, calibration rows) pairs of small and awkward calibration sets."""
-    for n in (20, 60):
+    for n in sizes:
         if len(pool) >= n:
             yield f"n{n}", rng.choice(pool, n, replace=False)
     by_class = [pool[y_index[pool] == c] for c in range(k)]
@@ -217,7 +311,27 @@ def weight_rules(comp, where, fn, args, dup_args, ws, w, value, equal=None):
 
 
 # --------------------------------------------------------------------------- checks
-def sweep_calibration(frozen, Xc, yc, Xt, yt_i, base_t, k, where, rng, quick):
+def sklearn_calibrated(frozen, Xc, yc, Xt):
+    """Test probabilities of scikit-learn's CalibratedClassifierCV methods on the same rows (a
+    frozen model is not refitted, so the two folds only partition the rows)."""
+    import sklearn
+    from sklearn.calibration import CalibratedClassifierCV
+    from sklearn.model_selection import KFold
+
+    version = tuple(int(v) for v in sklearn.__version__.split(".")[:2])
+    out = {}
+    for m in ["sigmoid", "isotonic"] + (["temperature"] if version >= (1, 8) else []):
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                out[m] = CalibratedClassifierCV(frozen, method=m, cv=KFold(2)).fit(
+                    Xc, yc).predict_proba(Xt)
+        except ValueError:  # e.g. a class missing from a fold
+            pass
+    return out
+
+
+def sweep_calibration(frozen, Xc, yc, Xt, yt_i, base_t, k, where, rng, quick, sk=None):
     for meth in (CAL_METHODS[:3] if quick else CAL_METHODS):
         comp = f"CalibrationWrapper[{meth}]"
         w = run(comp, where, lambda meth=meth: CalibrationWrapper(
@@ -227,6 +341,13 @@ def sweep_calibration(frozen, Xc, yc, Xt, yt_i, base_t, k, where, rng, quick):
         p = run(comp, where, w.predict_proba, Xt)
         if check_proba(comp, where, p, k):
             check_harm(comp, where, yt_i, p, base_t)
+            if sk:
+                if meth == "auto":
+                    best = min(sk, key=lambda m: test_log_loss(yt_i, sk[m]))
+                    check_harm(comp, where, yt_i, p, sk[best], "vs_sk", f"sklearn {best}")
+                elif SK_SAME.get(meth) in sk:
+                    check_harm(comp, where, yt_i, p, sk[SK_SAME[meth]], "vs_sk",
+                               f"sklearn {SK_SAME[meth]}")
         if meth == "auto":
             chosen = []
             for sw in all_weights(len(yc), rng):
@@ -266,6 +387,45 @@ def sweep_prior(frozen, Xc, yc, Xt, yt_i, base_t, k, where, rng):
         note(comp + ".adapt", "wscale", where, f"{priors}")
 
 
+shift_cells: list = []  # (where, factor, true prior, estimate, adapted/base, gap closed)
+
+
+def sweep_prior_shifted(frozen, Xc, yc, Xt, yt_i, k, where, rng, source_prior):
+    """Binary: test rows resampled to 0.5x and 2x their prevalence (a real prior shift), then
+    ``fit(Xc, yc).adapt`` on them; test log loss beside the base model and the oracle (the base
+    model's probabilities re-weighted to the true prior, Saerens et al. 2002, eq. 2.4)."""
+    if k != 2 or len(yt_i) < MIN_TEST_SMALL or not where.split("|")[-1].startswith("n"):
+        return
+    comp = "PriorShiftWrapper.adapt(shifted)"
+    pos, neg = np.flatnonzero(yt_i == 1), np.flatnonzero(yt_i == 0)
+    base_prev = len(pos) / len(yt_i)
+    for factor in (0.5, 2.0):
+        target = float(np.clip(factor * base_prev, 0.02, 0.9))
+        n = len(yt_i)
+        n_pos = int(round(target * n))
+        rows = np.concatenate([rng.choice(pos, n_pos), rng.choice(neg, n - n_pos)])
+        Xs, ys = Xt[rows], yt_i[rows]
+        ad = run(comp, f"{where}|x{factor}", lambda Xs=Xs: PriorShiftWrapper(
+            frozen, random_state=0, n_resamples=30).fit(Xc, yc).adapt(Xs))
+        if ad is None:
+            continue
+        p = run(comp, where, ad.predict_proba, Xs)
+        if not check_proba(comp, where, p, 2):
+            continue
+        base = frozen.predict_proba(Xs)
+        ratio = np.array([n_pos / n, 1 - n_pos / n])[::-1] / np.asarray(source_prior)
+        oracle = base * ratio
+        oracle /= oracle.sum(1, keepdims=True)
+        l_ad, l_base, l_or = (test_log_loss(ys, q) for q in (p, base, oracle))
+        gap = (l_base - l_ad) / (l_base - l_or) if l_base - l_or > 1e-3 else float("nan")
+        est = float(np.asarray(getattr(ad, "target_prior_", [np.nan, np.nan]))[1])
+        shift_cells.append((where, factor, n_pos / n, est, l_ad / l_base, gap))
+        if l_ad / l_base > HARM_LIMIT:
+            note(comp, "harm", f"{where}|x{factor}",
+                 f"log loss {l_ad / l_base:.2f} x base (oracle {l_or / l_base:.2f}); prior "
+                 f"{n_pos / n:.3f}, estimate {est:.3f}")
+
+
 def sweep_cost(frozen, Xc, yc, k, where, rng):
     costs = decision.zero_one_costs(k) * (1 + np.arange(k))[:, None]
     for strategy in ("bayes", "tuned"):
@@ -290,6 +450,12 @@ def sweep_cost(frozen, Xc, yc, k, where, rng):
                     m.cutoff_ if k == 2 else getattr(m, "offsets_", None)))
             if pairs_differ(picks):
                 note(comp, "wscale", where, f"{picks}")
+    comp = "CostPolicyWrapper[fixed]"
+    if k == 2:
+        cp = run(comp, where, lambda: CostPolicyWrapper(
+            frozen, costs=costs, strategy="fixed", cutoff=0.3).fit(Xc, yc))
+        if cp is not None:
+            run(comp, where, cp.predict, Xc)
     comp = "CostPolicyWrapper[guarantee]"
     g = ({"requirement": "recall", "target": 0.8} if k == 2
          else {"recall_floors": {0: 0.5}})
@@ -441,13 +607,21 @@ def _realised(y, act, c_fn) -> float:
     return float(np.mean((act == 1) & (y == 0)) + c_fn * np.mean((act == 0) & (y == 1)))
 
 
-def cost_sweep(quick: bool, seeds) -> dict:
+def _cost_new_binary_sets(quick: bool):
+    """The binary tasks of :func:`new_data_sets`, the positive class made the minority."""
+    for name, X, y in new_data_sets(quick):
+        y = np.asarray(y)
+        if len(np.unique(y)) == 2:
+            yield name, X, (y == 1).astype(int) if y.mean() <= 0.5 else (y == 0).astype(int)
+
+
+def cost_sweep(quick: bool, seeds, new: bool = False) -> dict:
     from sklearn.metrics import make_scorer
     from sklearn.model_selection import TunedThresholdClassifierCV
 
     rules = ["settled", "least_cost", "sklearn_tuned", "plugin", "half"]
     cells: dict = collections.defaultdict(lambda: collections.defaultdict(list))
-    for dname, X, y in _cost_binary_sets(quick):
+    for dname, X, y in (_cost_new_binary_sets(quick) if new else _cost_binary_sets(quick)):
         X = np.asarray(X, float)
         for seed in seeds:
             rng = np.random.default_rng(100 + seed)
@@ -541,7 +715,7 @@ def _cost_multiclass_sets(quick: bool):
     yield "anes96 PID", d.drop(columns=["PID", "vote"]).to_numpy(float), d["PID"].to_numpy(int)
 
 
-def cost_sweep_multiclass(quick: bool, seeds) -> None:
+def cost_sweep_multiclass(quick: bool, seeds, new: bool = False) -> None:
     """Tuned class offsets (settled toward zero) against the Bayes rule and the argmax.
 
     Errors on true class j cost j + 1. ``tuned`` is CostPolicyWrapper(strategy="tuned") as
@@ -550,7 +724,9 @@ def cost_sweep_multiclass(quick: bool, seeds) -> None:
     from probwrap.decision import tune_class_offsets
 
     cells: dict = collections.defaultdict(lambda: collections.defaultdict(list))
-    for dname, X, y in _cost_multiclass_sets(quick):
+    multi = ([(d, X, y) for d, X, y in new_data_sets(quick) if len(np.unique(y)) > 2] if new
+             else _cost_multiclass_sets(quick))
+    for dname, X, y in multi:
         X = np.asarray(X, float)
         classes, y = np.unique(y, return_inverse=True)
         k = len(classes)
@@ -611,21 +787,38 @@ def main(argv: list[str]) -> None:
     n_seeds = int(argv[argv.index("--seeds") + 1]) if "--seeds" in argv else (1 if quick else 3)
     seeds = range(n_seeds)
     if "--only" in argv and argv[argv.index("--only") + 1] == "cost":
-        cost_sweep(quick, seeds)
-        cost_sweep_multiclass(quick, seeds)
+        new = "--sets" in argv and argv[argv.index("--sets") + 1] == "new"
+        cost_sweep(quick, seeds, new)
+        cost_sweep_multiclass(quick, seeds, new)
         return
+    which = argv[argv.index("--sets") + 1] if "--sets" in argv else "all"
+    sets = []
+    if which in ("all", "first"):
+        sets += [(d, X, y, False) for d, X, y in data_sets(quick)]
+    if which in ("all", "new"):
+        sets += [(d, X, y, True) for d, X, y in new_data_sets(quick)]
+    if "--skip" in argv:  # comma-separated parts of data-set names to leave out
+        skip = argv[argv.index("--skip") + 1].split(",")
+        sets = [s for s in sets if not any(part in s[0] for part in skip)]
     n_draws = 0
-    for dname, X, y in data_sets(quick):
+    for dname, X, y, new in sets:
         X = np.asarray(X, float)
         classes, y_index = np.unique(np.asarray(y), return_inverse=True)
         k = len(classes)
         for seed in seeds:
             rng = np.random.default_rng(seed)
             idx = rng.permutation(len(y_index))
-            n_fit = min(len(idx) // 3, 600)
-            fit_rows, rest = idx[:n_fit], idx[n_fit:]
-            n_test = min(len(rest) // 2, 1500)
-            test_rows, pool = rest[:n_test], rest[n_test:]
+            if new:
+                # the new sets are small: a quarter trains the model; calibration sets are drawn
+                # from the rest and every other row of the rest (at most 800) is a test row
+                n_fit = min(len(idx) // 4, 600)
+                fit_rows, rest = idx[:n_fit], idx[n_fit:]
+                test_rows, pool = rest, rest
+            else:
+                n_fit = min(len(idx) // 3, 600)
+                fit_rows, rest = idx[:n_fit], idx[n_fit:]
+                n_test = min(len(rest) // 2, 1500)
+                test_rows, pool = rest[:n_test], rest[n_test:]
             if len(np.unique(y_index[fit_rows])) != k:
                 continue
             for mname, model in base_models(quick, seed):
@@ -637,21 +830,32 @@ def main(argv: list[str]) -> None:
                     model = CalibrationWrapper(FrozenEstimator(model), method="platt").fit(
                         X[fit_rows], y_index[fit_rows])
                 frozen = FrozenEstimator(model)
-                Xt, yt = X[test_rows], y_index[test_rows]
-                base_t = model.predict_proba(Xt)
-                for draw, cal in draws(y_index, pool, k, rng):
+                source_prior = np.bincount(y_index[fit_rows], minlength=k) / n_fit
+                sizes = (20, 60, 200) if new else (20, 60)
+                # the new sets' draws are made before the checks use the generator, so that
+                # one draw can be rebuilt from (data set, seed, model) alone
+                cal_draws = (list(draws(y_index, pool, k, np.random.default_rng([seed, 7]), sizes))
+                             if new else draws(y_index, pool, k, rng, sizes))
+                for draw, cal in cal_draws:
                     n_draws += 1
                     where = f"{dname}|{mname}|seed{seed}|{draw}"
+                    t_rows = test_rows[~np.isin(test_rows, cal)][:800] if new else test_rows
+                    Xt, yt = X[t_rows], y_index[t_rows]
+                    base_t = model.predict_proba(Xt)
                     Xc, yc = X[cal].copy(), y_index[cal].copy()
                     Xc0, yc0 = Xc.copy(), yc.copy()
-                    sweep_calibration(frozen, Xc, yc, Xt, yt, base_t, k, where, rng, quick)
+                    sk = sklearn_calibrated(frozen, Xc, yc, Xt) if new else None
+                    sweep_calibration(frozen, Xc, yc, Xt, yt, base_t, k, where, rng, quick, sk)
                     sweep_prior(frozen, Xc, yc, Xt, yt, base_t, k, where, rng)
+                    if new:
+                        sweep_prior_shifted(frozen, Xc, yc, Xt, yt, k, where, rng, source_prior)
                     sweep_cost(frozen, Xc, yc, k, where, rng)
                     sweep_array_core(model.predict_proba(Xc), yc, k, where, rng)
                     if not (np.array_equal(Xc, Xc0) and np.array_equal(yc, yc0)):
                         note("wrappers", "inplace", where)
                 print(f"{dname} {mname} seed {seed} done", flush=True)
-    kinds = ["crash", "nonfinite", "exact0/1", "rowsum", "inplace", "wscale", "freq", "harm"]
+    kinds = ["crash", "nonfinite", "exact0/1", "rowsum", "inplace", "wscale", "freq", "harm",
+             "harm<200", "vs_sk", "vs_sk<200"]
     print(f"\n{n_draws} calibration draws\n")
     width = max(len(c) for c in components) + 2
     print("component".ljust(width) + "".join(k.rjust(10) for k in kinds))
@@ -662,6 +866,20 @@ def main(argv: list[str]) -> None:
     print(f"\ntotal problems: {sum(problems.values()) or 'none'}")
     for (comp, kind), ex in sorted(examples.items()):
         print(f"  {comp} {kind}: {ex}")
+    if ratios:
+        print("\nTest log-loss ratios on random draws (geometric mean | worst | cells)")
+        for (comp, kind), r in sorted(ratios.items()):
+            r = np.asarray(r)
+            gm = float(np.exp(np.mean(np.log(np.maximum(r, 1e-12)))))
+            print(f"  {comp:34} {kind:6} {gm:6.3f} | {r.max():6.2f} | {len(r)}")
+    if shift_cells:
+        r = np.array([c[4] for c in shift_cells])
+        gap = np.array([c[5] for c in shift_cells])
+        err = np.array([abs(c[3] - c[2]) for c in shift_cells])
+        print(f"\nPrior shift made by resampling ({len(r)} cells): adapted/base log loss "
+              f"geometric mean {np.exp(np.mean(np.log(r))):.3f}, worst {r.max():.2f}; "
+              f"share of the gap to the oracle closed, median {np.nanmedian(gap):.2f}; "
+              f"|estimate - true prior| mean {np.nanmean(err):.3f}")
 
 
 if __name__ == "__main__":

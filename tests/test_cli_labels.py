@@ -176,3 +176,26 @@ def test_report_on_log_odds_matches_the_report_on_probabilities(text_files, tmp_
         assert code == 0, err
         got[name] = json.loads(out)
     assert got["lo"]["cutoff"] == pytest.approx(got["pr"]["cutoff"], rel=1e-9)
+
+
+def test_suggested_positive_label_with_a_space_can_be_pasted(tmp_path, capsys):
+    # statsmodels' bundled spector data (Spector & Mazzeo 1980): GRADE 1 = improved; a label
+    # with a space must be suggested shell-quoted, and pasting the suggestion must work
+    import shlex
+
+    import statsmodels.api as sm
+
+    d = sm.datasets.spector.load_pandas().data
+    frame = pd.DataFrame({"risk": d["GPA"] / 4.0,
+                          "outcome": np.where(d["GRADE"] == 1, "improved", "not improved")})
+    frame.to_csv(tmp_path / "spector.csv", index=False)
+    base = ["calibrate", "fit", "--scores", tmp_path / "spector.csv", "--score-column", "risk",
+            "--label-column", "outcome", "--method", "isotonic", "--out", tmp_path / "m.json"]
+    code, _, err = run(capsys, *base)
+    assert code == 1
+    line = err.strip().splitlines()[-1]
+    assert "--positive-label 'not improved'" in line and "--positive-label improved" in line
+    suggested = shlex.split(line.split(" or ")[-1])  # ["--positive-label", "not improved"]
+    code, out, _ = run(capsys, *base, *suggested)
+    assert code == 0
+    assert out.startswith("fitted an isotonic map on 32 rows (21 with label 'not improved')")

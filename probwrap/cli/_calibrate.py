@@ -179,7 +179,7 @@ def _fit(args: argparse.Namespace) -> int:
         stages.start("writing")
         write_text(args.out, json.dumps(description, indent=2, allow_nan=False) + "\n")
     print(
-        f"fitted a {wrapper.method_} map on {scores.shape[0]} rows ({counts[1]} with label "
+        f"fitted {'an' if wrapper.method_[0] in 'aeiou' else 'a'} {wrapper.method_} map on {scores.shape[0]} rows ({counts[1]} with label "
         f"{shown(labels[1])}) and saved it to {args.out}"
     )
     if late is not None:

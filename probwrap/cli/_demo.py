@@ -257,7 +257,11 @@ def _handler(args: argparse.Namespace) -> int:
     ece = metric["ece"]
     print(f"  calibration error (ECE)    {ece.value:.4f}  [{ece.low:.4f}, {ece.high:.4f}]")
     iv = c.chosen_interval
-    print(f"  chosen cutoff              {c.chosen_cutoff:.4f}  [{iv[0]:.4f}, {iv[1]:.4f}]")
+    if c.interval_cutoff is None or c.interval_cutoff == c.chosen_cutoff:
+        print(f"  chosen cutoff              {c.chosen_cutoff:.4f}  [{iv[0]:.4f}, {iv[1]:.4f}]")
+    else:  # the interval belongs to the least-cost cutoff, not to the settled one
+        print(f"  chosen cutoff              {c.chosen_cutoff:.4f}")
+        print(f"  least-cost cutoff          {c.interval_cutoff:.4f}  [{iv[0]:.4f}, {iv[1]:.4f}]")
     print(f"  {'rule':<34}{'cost/parcel':>12}{'inspected':>11}")
     for key in ("chosen", "plugin", "half", "none", "all"):
         if key in rules:

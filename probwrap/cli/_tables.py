@@ -8,6 +8,7 @@ row.
 from __future__ import annotations
 
 import re
+import shlex
 from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
@@ -216,7 +217,9 @@ def read_labels(
         raise DataError(
             f"{path}: column {shown(column)} holds the labels {shown(a)} and {shown(b)}, not 0/1; "
             f"say which one is the positive class (the class the scores are the probability of) "
-            f"with --positive-label {clean(a)} or --positive-label {clean(b)}"
+            # shell-quoted: a label with a space ("not improved") must be pasted as one word
+            f"with --positive-label {shlex.quote(clean(a))} or "
+            f"--positive-label {shlex.quote(clean(b))}"
         )
     pos = distinct[pos_index]
     neg = distinct[1 - pos_index]

@@ -36,6 +36,8 @@ class RuleRow:
 BAYES_NAME = "Bayes cutoff"
 HALF_NAME = "0.5 cutoff"
 HINDSIGHT_NAME = "least-cost cutoff on these rows (hindsight)"
+# what a tuned policy's ``cutoff_interval_`` is the interval of (``cost_curve_.cutoff``)
+HELDOUT_LEAST_COST_NAME = "least-cost cutoff on the policy's held-out predictions"
 CAPACITY_NAME = "capacity cutoff"
 CHOSEN_NAMES = {
     "tuned": "tuned cutoff",

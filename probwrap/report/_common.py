@@ -6,6 +6,7 @@ import from here; neither imports the other's internals through this module.
 
 from __future__ import annotations
 
+import re
 import warnings
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -96,6 +97,9 @@ class Recommendation:
     base_cutoff: float | None = None
 
 
+_NUMBER = re.compile(r"\d+(?:\.\d+)?(?:e[-+]?\d+)?")
+
+
 class NoteLog:
     """Collects :class:`ReportNote` objects, one computation at a time.
 
@@ -123,13 +127,20 @@ class NoteLog:
                 result = None
             else:
                 failure = None
-        seen: dict[tuple[type, str], int] = {}
+        # one note per kind of warning: messages that differ only in their numbers (a count of
+        # clipped rows that changes from one bootstrap resample to the next) are one note,
+        # showing the first message (the computation on all rows comes first) and the count
+        seen: dict[tuple[type, str], list[Any]] = {}
         for w in caught:
-            k = (w.category, str(w.message))
-            seen[k] = seen.get(k, 0) + 1
-        for (category, message), count in seen.items():
+            k = (w.category, _NUMBER.sub("#", str(w.message)))
+            if k in seen:
+                seen[k][1] += 1
+            else:
+                seen[k] = [str(w.message), 1]
+        for (category, _), (message, count) in seen.items():
             self.add(key, about, category.__name__, message, count)
-            warnings.warn(f"report, {about}: {message}", category, stacklevel=3)
+            more = f" ({count} warnings of this kind; the first is shown)" if count > 1 else ""
+            warnings.warn(f"report, {about}: {message}{more}", category, stacklevel=3)
         if failure is not None:
             self.add(key, about, "not computed", failure)
             warnings.warn(f"report, {about}: not computed: {failure}", UserWarning,

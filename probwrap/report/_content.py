@@ -34,6 +34,7 @@ from ._binary_rules import (
     BAYES_NAME,
     CHOSEN_NAMES,
     HALF_NAME,
+    HELDOUT_LEAST_COST_NAME,
     HINDSIGHT_NAME,
     POLICY_SOURCES,
     RuleRow,
@@ -78,7 +79,11 @@ class ReportContent:
     capacity: float | None = None
     cutoff_source: str = ""
     chosen_cutoff: float | None = None
+    # bootstrap interval of the cutoff ``interval_cutoff`` (named ``interval_name``): the
+    # least-cost cutoff, which the chosen (settled) cutoff of a tuned policy need not equal
     chosen_interval: tuple[float, float] | None = None
+    interval_cutoff: float | None = None
+    interval_name: str = ""
     plugin: float | None = None
     rules: list[RuleRow] = field(default_factory=list)
     cost_curve: Any = None
@@ -297,7 +302,11 @@ def collect_content(
                 content.cost_interval = policy.cutoff_interval_
                 ci = content.cost_interval  # None for a guaranteed cutoff (no bootstrap)
                 if ci is not None:
+                    # the interval is that of the least-cost cutoff on the policy's held-out
+                    # predictions (cost_curve_.cutoff), not of the settled cutoff_
                     content.chosen_interval = (float(ci.low), float(ci.high))
+                    content.interval_cutoff = float(policy.cost_curve_.cutoff)
+                    content.interval_name = HELDOUT_LEAST_COST_NAME
         else:
             content.chosen_cutoff = float(res.cutoff)
             content.cutoff_source = "the least-cost search on the labelled rows of this report"
@@ -309,6 +318,8 @@ def collect_content(
             content.cost_curve = res
             content.cost_interval = ci
             content.chosen_interval = (float(ci.low), float(ci.high))
+            content.interval_cutoff = float(res.cutoff)
+            content.interval_name = chosen_name
         content.chosen_name = chosen_name
         candidates = [("chosen", chosen_name, content.chosen_cutoff)]
         if content.plugin is not None:

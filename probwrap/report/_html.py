@@ -131,12 +131,23 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
             f"{_text(c.cutoff_source)}; {cap}."
         )
         if c.chosen_interval is not None:
-            parts.append(
-                f' Its {c.confidence_level:.0%} bootstrap interval is '
+            span = (
                 f'<span id="cutoff-interval" data-low="{c.chosen_interval[0]!r}" '
-                f'data-high="{c.chosen_interval[1]!r}">{c.chosen_interval[0]:.4f} to '
-                f"{c.chosen_interval[1]:.4f}</span>."
+                f'data-high="{c.chosen_interval[1]!r}" data-cutoff="{c.interval_cutoff!r}">'
+                f"{c.chosen_interval[0]:.4f} to {c.chosen_interval[1]:.4f}</span>"
             )
+            if c.interval_cutoff is None or c.interval_cutoff == c.chosen_cutoff:
+                parts.append(f" Its {c.confidence_level:.0%} bootstrap interval is {span}.")
+            else:
+                # a tuned policy keeps the Bayes cutoff unless its held-out rows show the
+                # least-cost cutoff to cost less: the interval is the least-cost cutoff's
+                parts.append(
+                    f" The {c.confidence_level:.0%} bootstrap interval of the "
+                    f"{_text(c.interval_name)} ({c.interval_cutoff:.4f}) is {span}. It is "
+                    f"not an interval of the {_text(c.chosen_name)}: that one moves from the "
+                    f"{BAYES_NAME} only as far as the held-out rows show a cost saving, and can "
+                    "lie outside it."
+                )
         if c.plugin is not None:
             parts.append(
                 f" With calibrated probabilities the {BAYES_NAME} "

@@ -66,7 +66,8 @@ def notes_box(notes: Any, box_id: str, title: str = "Notes") -> str:
         return ""
     items = "".join(
         f'<li data-note="{_text(n.key)}" data-kind="{_text(n.kind)}"><b>{_text(n.about)}</b> '
-        f"({_text(n.kind)}{f', {n.count} times' if n.count > 1 else ''}): {_text(n.message)}"
+        f"({_text(n.kind)}{f', {n.count} times, the first shown' if n.count > 1 else ''}): "
+        f"{_text(n.message)}"
         "</li>"
         for n in notes
     )
