@@ -500,18 +500,36 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         ]
         q = np.column_stack(cols)
         if kept.any():
-            # classes without calibration rows keep the model's own probability; the
-            # calibrated classes share the rest in proportion to their calibrated values
-            rest = np.maximum(1.0 - q[:, kept].sum(axis=1, keepdims=True), 0.0)
-            if not kept.all():
-                part = q[:, ~kept]
-                q[:, ~kept] = part / part.sum(axis=1, keepdims=True) * rest
-            q = np.maximum(q, self._clip_value())
-            return q / q.sum(axis=1, keepdims=True)
+            return self._share_with_kept_classes(q, kept)
         total = q.sum(axis=1, keepdims=True)
         uniform = np.full_like(q, 1.0 / q.shape[1])
         with np.errstate(invalid="ignore", divide="ignore"):
             return np.where(total > 0, q / np.where(total > 0, total, 1.0), uniform)
+
+    def _share_with_kept_classes(self, q: np.ndarray, kept: np.ndarray) -> np.ndarray:
+        """Rows of one-vs-rest outputs ``q`` where the classes ``kept`` (no calibration rows)
+        hold the model's own probability.
+
+        A kept class keeps the model's probability, raised to ``clip_`` only where it is below
+        (an exact 0 of a forest); the calibrated classes share the rest of the row in
+        proportion to their calibrated one-vs-rest values, which their maps' floors keep
+        positive. Only where the kept classes would leave the calibrated ones less than
+        ``clip_`` each are the kept probabilities scaled down to leave them that. When every
+        class is kept (a single class present), the model's probabilities are floored at
+        ``clip_`` and renormalised.
+        """
+        clip = self._clip_value()
+        q = q.copy()
+        q[:, kept] = np.maximum(q[:, kept], clip)
+        if kept.all():
+            return q / q.sum(axis=1, keepdims=True)
+        room = 1.0 - clip * float(np.count_nonzero(~kept))
+        held = q[:, kept].sum(axis=1, keepdims=True)
+        q[:, kept] *= np.minimum(1.0, room / held)
+        rest = 1.0 - q[:, kept].sum(axis=1, keepdims=True)
+        part = q[:, ~kept]
+        q[:, ~kept] = part / part.sum(axis=1, keepdims=True) * rest
+        return q
 
     # -- prediction ----------------------------------------------------------------------------
     def _calibrated(self, X: Any) -> np.ndarray:
