@@ -16,7 +16,7 @@ from .._validation import (
     row_max,
     row_sum,
 )
-from ..calibration._logodds import proba_to_log_proba
+from ..calibration._logodds import DEFAULT_CLIP, proba_to_log_proba
 
 __all__ = ["BiasCorrectedScaling"]
 
@@ -83,6 +83,24 @@ def identity_test(
     stat = max(0.0, 2.0 * n_rows * (loss_identity - loss_fitted))
     pvalue = float(chi2.sf(stat, n_params)) if np.isfinite(stat) else 0.0
     return pvalue, level is not None and pvalue > level
+
+
+def heldout_clip(proba: np.ndarray, sample_weight: np.ndarray | None = None) -> float:
+    """Floor for the held-out probabilities before logarithms, chosen from the data.
+
+    The same rule as :class:`probwrap.CalibrationWrapper` with ``clip=None`` (shared code):
+    half the smallest non-zero probability of the rows of weight > 0, within
+    ``[DEFAULT_CLIP, 0.25]``. A forest of ``n`` trees outputs multiples of ``1/n``, so its exact
+    0 sits just beyond its own resolution (log ``1/(2n)``) instead of at log 1e-12 = -27.6,
+    where one held-out row at exactly 0 would dominate the identity test and the fitted scale.
+    """
+    from .._calibration_wrapper import CalibrationWrapper
+
+    p = np.asarray(proba, dtype=float)
+    if sample_weight is not None and p.shape[0] == np.shape(sample_weight)[0]:
+        p = p[np.asarray(sample_weight) > 0]
+    positive = p[p > 0]
+    return CalibrationWrapper._clip_from_smallest(float(positive.min()) if positive.size else np.inf)
 
 
 def _log_softmax(u: np.ndarray, axis: int = 1) -> np.ndarray:
@@ -248,15 +266,21 @@ class BiasCorrectedScaling:
         -------
         self
         """
-        return self.fit_log_proba(proba_to_log_proba(proba), y, sample_weight)
+        p = np.asarray(proba, dtype=float)
+        w = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
+        clip = heldout_clip(p, w)
+        return self.fit_log_proba(proba_to_log_proba(proba, clip=clip), y, sample_weight, clip=clip)
 
     def fit_log_proba(
-        self, log_proba: Any, y: Any, sample_weight: Any = None, *, warm_start: Any = None
+        self, log_proba: Any, y: Any, sample_weight: Any = None, *, warm_start: Any = None,
+        clip: float | None = None,
     ) -> BiasCorrectedScaling:
         """Fit on held-out log-probabilities or logits of shape (n, k).
 
         ``warm_start`` is another fitted :class:`BiasCorrectedScaling` of the same kind and
         number of classes whose parameters start the optimiser (used by bootstrap resampling).
+        ``clip`` is the floor the log-probabilities were taken with (see :func:`heldout_clip`);
+        :meth:`predict` applies the same floor to new probabilities (default ``1e-12``).
         """
         if self.kind not in _KINDS:
             raise ValueError(f"`kind` must be one of {_KINDS}; got {plain(self.kind)!r}.")
@@ -335,7 +359,12 @@ class BiasCorrectedScaling:
         self.n_classes_ = k
         self.converged_ = bool(converged)
         self.floor_ = _floor(n_rows, k) if lam > 0 else 0.0
+        self.clip_ = DEFAULT_CLIP if clip is None else float(clip)
         return self
+
+    def log_scores(self, proba: Any) -> np.ndarray:
+        """Log-probabilities of posteriors (n, k) floored at the fitted ``clip_``."""
+        return proba_to_log_proba(proba, clip=float(getattr(self, "clip_", DEFAULT_CLIP)))
 
     def predict_log_proba(self, log_proba: Any) -> np.ndarray:
         """Calibrated log-posteriors from log-probabilities or logits of shape (n, k)."""
@@ -357,14 +386,14 @@ class BiasCorrectedScaling:
 
     def predict(self, proba: Any) -> np.ndarray:
         """Calibrated posteriors from posteriors of shape (n, k)."""
-        return np.exp(self.predict_log_proba(proba_to_log_proba(proba)))
+        return np.exp(self.predict_log_proba(self.log_scores(proba)))
 
     def predict_output(self, proba: Any) -> np.ndarray:
         """Posteriors to hand to a user: :meth:`predict`, or the model's own probabilities
         (at least ``floor_``, rows renormalised) when the likelihood-ratio test kept them."""
         if not getattr(self, "identity_kept_", False):
             return self.predict(proba)
-        z = proba_to_log_proba(proba)
+        z = self.log_scores(proba)
         out = _log_softmax(np.asarray(z, dtype=float), axis=1)
         floor = float(getattr(self, "floor_", 0.0))
         if floor > 0.0:

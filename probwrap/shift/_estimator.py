@@ -15,7 +15,7 @@ from sklearn.utils import check_random_state
 
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ..calibration._logodds import proba_to_log_proba
-from ._calibration import BiasCorrectedScaling
+from ._calibration import BiasCorrectedScaling, heldout_clip
 from ._confusion import acc_prior, bbse_prior, heldout_confusion
 from ._estimate import BoundaryPriorWarning, PriorEstimate, _solve_prior, _warn_empty_columns
 from ._interval import score_interval
@@ -227,8 +227,11 @@ class PriorEstimator(_Resampling):
         cal = None
         if self.calibration is not None:
             kind = "temperature" if self.calibration == "bcts" else "vector"
+            # the floor before logarithms: chosen from the held-out rows as CalibrationWrapper
+            # does (kept fixed for bootstrap refits, which start from the fitted map)
+            clip = getattr(warm_start, "clip_", None) or heldout_clip(p, w)
             cal = BiasCorrectedScaling(kind=kind).fit_log_proba(
-                proba_to_log_proba(p), y_idx, w, warm_start=warm_start
+                proba_to_log_proba(p, clip=clip), y_idx, w, warm_start=warm_start, clip=clip
             )
             p = cal.predict(p)
         prior = np.bincount(y_idx, weights=w, minlength=k) / w.sum()
@@ -284,7 +287,7 @@ class PriorEstimator(_Resampling):
         ``draw_source(b)`` gives labelled row weights (or None: labelled rows as fitted),
         ``draw_target(b)`` target row weights.
         """
-        z_t = proba_to_log_proba(target_proba) if self.calibrator_ is not None else None
+        z_t = self.calibrator_.log_scores(target_proba) if self.calibrator_ is not None else None
         p_t = self.calibrate(target_proba)
         draws, dropped = [], 0
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):

@@ -13,7 +13,6 @@ import warnings
 import numpy as np
 from scipy.special import expit
 
-from ..calibration._logodds import proba_to_log_proba
 from ._calibration import _log_softmax
 from ._confusion import _simplex_least_squares
 from ._estimate import _solve_prior
@@ -104,7 +103,7 @@ class _Resampling:
         if cal is None:
             parts["p"] = sp
         else:
-            z = proba_to_log_proba(sp)
+            z = cal.log_scores(sp)
             n_scale = 1 if cal.kind == "temperature" else k
             p = np.exp(_log_softmax(z * cal.scale_ + cal.bias_, axis=1))
             n = z.shape[0]

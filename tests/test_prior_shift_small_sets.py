@@ -1,0 +1,81 @@
+"""Prior-shift wrapper on small labelled sets of real data: the floor before logarithms is
+chosen from the held-out rows (as CalibrationWrapper does), so one labelled row at exactly 0
+is not evidence against the whole model."""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+from sklearn.ensemble import RandomForestClassifier
+from sklearn.frozen import FrozenEstimator
+from sklearn.metrics import log_loss
+
+from probwrap import CalibrationWrapper, PriorShiftWrapper
+from probwrap.shift import BiasCorrectedScaling
+from probwrap.shift._calibration import heldout_clip
+
+
+@pytest.fixture(scope="module")
+def anes_forest():
+    """statsmodels' bundled anes96 (1996 election survey), target ``vote``; a 50-tree forest
+    fitted on 100 rows outputs multiples of 1/50, and exactly 0 for one of the other rows'
+    own class."""
+    sm = pytest.importorskip("statsmodels.api")
+    d = sm.datasets.anes96.load_pandas().data
+    X = d.drop(columns="vote").to_numpy(float)
+    y = d["vote"].to_numpy(int)
+    idx = np.random.default_rng(0).permutation(y.shape[0])
+    fit, rest = idx[:100], idx[100:]
+    model = RandomForestClassifier(n_estimators=50, random_state=0).fit(X[fit], y[fit])
+    own = model.predict_proba(X[rest])[np.arange(rest.shape[0]), y[rest]]
+    assert np.count_nonzero(own == 0) >= 1  # the case under test exists
+    return X, y, model, rest, own
+
+
+def test_clip_is_calibration_wrappers_rule(anes_forest):
+    # consistency test: the same data-chosen floor as CalibrationWrapper(clip=None)
+    X, y, model, rest, _ = anes_forest
+    rows = rest[:60]
+    cw = CalibrationWrapper(FrozenEstimator(model), method="temperature").fit(X[rows], y[rows])
+    assert heldout_clip(model.predict_proba(X[rows])) == cw.clip_
+    assert cw.clip_ == pytest.approx(0.01)  # half of the forest's resolution 1/50
+    ps = PriorShiftWrapper(FrozenEstimator(model), n_resamples=0).fit(X[rows], y[rows])
+    assert ps.calibrator_.clip_ == cw.clip_
+
+
+def test_one_row_at_zero_does_not_flatten_predictions(anes_forest):
+    X, y, model, rest, own = anes_forest
+    zero = rest[own == 0][:1]
+    ratios = []
+    for seed in range(8):
+        others = np.random.default_rng(seed).choice(rest[own > 0], 19, replace=False)
+        cal = np.concatenate([zero, others])
+        test = rest[~np.isin(rest, cal)]
+        base = log_loss(y[test], np.clip(model.predict_proba(X[test]), 1e-12, 1))
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            ps = PriorShiftWrapper(FrozenEstimator(model), n_resamples=0).fit(X[cal], y[cal])
+        ratios.append(log_loss(y[test], ps.predict_proba(X[test])) / base)
+    # with the floor at 1e-12 the single 0 (log-probability -27.6) made the identity test reject
+    # and the fitted temperature flatten every prediction: geometric mean 1.9x the model's own
+    # test log loss over these draws, every draw above 1.1x. With the forest's own floor the
+    # remaining harm is the 20-row calibration's noise (CalibrationWrapper's auto is similar);
+    # 1.15 leaves room for that, far below 1.9.
+    assert np.exp(np.mean(np.log(ratios))) < 1.15
+
+
+def test_bias_corrected_scaling_uses_clip_at_predict():
+    # the floor chosen in fit is the one applied to new probabilities
+    p = np.array([[0.9, 0.1], [0.5, 0.5], [0.2, 0.8], [1.0, 0.0]] * 5)
+    y = np.array([0, 0, 1, 1] * 5)
+    cal = BiasCorrectedScaling(identity_level=None).fit(p, y)
+    assert cal.clip_ == pytest.approx(0.05)  # half the smallest non-zero probability 0.1
+    z = np.log(np.maximum(p, 0.05))
+    logits = z * cal.scale_ + cal.bias_
+    expected = np.exp(logits - np.log(np.exp(logits).sum(1, keepdims=True)))
+    floor = cal.floor_
+    expected = np.maximum(expected, floor)
+    expected /= expected.sum(1, keepdims=True)
+    np.testing.assert_allclose(cal.predict(p), expected, rtol=1e-12)
