@@ -17,6 +17,9 @@ from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
 from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
 from .shift._shift_tests import evidence_cutoff
 
+#: Fewer labelled rows of a class than this makes ``fit`` warn (see ``_warn_few_class_rows``).
+MIN_CLASS_ROWS = 5
+
 __all__ = ["PriorShiftWrapper"]
 
 
@@ -308,6 +311,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             self._source_tally = None
             return self._finish_fit(est)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
+        if not ho.from_tally:
+            self._warn_few_class_rows(ho.y_index, ho.sample_weight)
         est = PriorEstimator(
             self.method,
             calibration=self.calibration,
@@ -329,6 +334,28 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
             est._condense_source(check_resolution(self.tally_resolution), SUMMARY_BINS)
         return self._finish_fit(est)
+
+    def _warn_few_class_rows(self, y_index: np.ndarray, w: np.ndarray) -> None:
+        """Warn, naming the class(es), when a class has fewer than ``MIN_CLASS_ROWS`` labelled
+        rows of weight > 0 (rows, not weights: the scale of the weights does not matter).
+
+        ``source_prior_``, the calibration's bias for that class and the chi-square
+        approximation of its identity test then rest on a handful of rows; 5 is the common-
+        practice minimum count for a chi-square approximation (Cochran 1954).
+        """
+        counts = np.bincount(np.asarray(y_index, dtype=np.intp)[np.asarray(w) > 0],
+                             minlength=len(self.classes_))
+        few = np.flatnonzero(counts < MIN_CLASS_ROWS)
+        if few.size:
+            listed = ", ".join(f"{plain(self.classes_[c])!r}: {int(counts[c])}" for c in few)
+            warnings.warn(
+                f"PriorShiftWrapper.fit: class(es) with fewer than {MIN_CLASS_ROWS} labelled "
+                f"rows ({listed}); source_prior_ and the calibration rest on those few rows, so "
+                "prior estimates and adapted probabilities are unreliable. Label more rows of "
+                "the class(es) named.",
+                UserWarning,
+                stacklevel=3,
+            )
 
     def _finish_fit(self, est: PriorEstimator) -> PriorShiftWrapper:
         self.prior_estimator_ = est

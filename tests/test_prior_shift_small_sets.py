@@ -79,3 +79,32 @@ def test_bias_corrected_scaling_uses_clip_at_predict():
     expected = np.maximum(expected, floor)
     expected /= expected.sum(1, keepdims=True)
     np.testing.assert_allclose(cal.predict(p), expected, rtol=1e-12)
+
+
+def _diabetes_nb():
+    from sklearn.datasets import load_diabetes
+    from sklearn.naive_bayes import GaussianNB
+
+    X, target = load_diabetes(return_X_y=True)
+    y = (target > np.quantile(target, 0.9)).astype(int)
+    return X, y, FrozenEstimator(GaussianNB().fit(X[:200], y[:200]))
+
+
+@pytest.mark.parametrize("scale", [1.0, 1e-3])
+def test_fit_warns_for_a_class_with_one_row(scale):
+    # scikit-learn's diabetes, progression above its 90 % quantile: 20 labelled rows, ONE positive
+    X, y, model = _diabetes_nb()
+    rest = np.arange(200, y.shape[0])
+    rows = np.concatenate([rest[y[rest] == 1][:1], rest[y[rest] == 0][:19]])
+    w = np.full(rows.shape[0], scale)  # rows are counted, so the weights' scale does not matter
+    with pytest.warns(UserWarning, match=r"fewer than 5 labelled rows \(1: 1\)"):
+        PriorShiftWrapper(model, n_resamples=0).fit(X[rows], y[rows], sample_weight=w)
+
+
+def test_fit_silent_with_enough_rows_of_each_class():
+    X, y, model = _diabetes_nb()
+    rest = np.arange(200, y.shape[0])
+    rows = np.concatenate([rest[y[rest] == 1][:5], rest[y[rest] == 0][:15]])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        PriorShiftWrapper(model, n_resamples=0).fit(X[rows], y[rows])
