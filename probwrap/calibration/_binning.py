@@ -43,8 +43,8 @@ class BinningMap(CalibrationMap):
     n_bins : int, default=10
         Number of equal-mass bins (at least 1).
     prior_strength : float, default=2.0
-        Weight of the prior towards the overall positive rate, in rows; 0 gives the raw
-        per-bin positive rate.
+        Weight of the prior towards the model's own mean probability in the bin, in rows; 0
+        gives the raw per-bin positive rate.
 
     Attributes
     ----------
