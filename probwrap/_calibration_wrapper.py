@@ -28,7 +28,7 @@ from .calibration._base import (
 from .calibration._binning import BinningMap
 from .calibration._identity import IdentityMap
 from .calibration._isotonic import IsotonicMap
-from .calibration._logodds import DEFAULT_CLIP
+from .calibration._logodds import DEFAULT_CLIP, clip_from_smallest
 from .calibration._venn_abers import VennAbersMap
 
 __all__ = ["CalibrationWrapper", "CALIBRATION_METHODS"]
@@ -332,9 +332,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
     def _clip_from_smallest(smallest: float) -> float:
         """Half the smallest non-zero probability, within ``[DEFAULT_CLIP, 0.25]`` (``inf``:
         no non-zero probability, ``DEFAULT_CLIP``)."""
-        if not np.isfinite(smallest):
-            return DEFAULT_CLIP
-        return float(min(max(0.5 * smallest, DEFAULT_CLIP), 0.25))
+        return clip_from_smallest(smallest)  # shared with the prior-shift calibration
 
     def _clip_value(self) -> float:
         clip = getattr(self, "clip_", None)

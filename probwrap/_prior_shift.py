@@ -470,6 +470,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             weight = max(0.0, 1.0 - threshold / stat) if stat > 0 else 0.0
         self.adaptation_weight_ = float(weight)
         self.shift_detected_ = bool(weight > 0)
+        self._warn_uninformative(interval, getattr(res, "identified", True))
         src = self.source_prior_
         if self.known_prior_ is not None:
             self.applied_prior_ = self.known_prior_.copy()
@@ -487,6 +488,31 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 stacklevel=3,
             )
         return self
+
+    def _warn_uninformative(self, interval: Any, identified: bool) -> None:
+        """Warn when a class's interval spans all of [0, 1]: the data then say nothing about
+        that class's share, and ``target_prior_`` is not a usable estimate (whatever its value).
+        Not repeated where the estimator already warned that the priors are not identified."""
+        if interval is None or not identified:
+            return
+        iv = np.asarray(interval, dtype=float)
+        if iv.ndim != 2 or iv.shape[1] != 2:
+            return
+        wide = np.flatnonzero((iv[:, 0] <= 1e-6) & (iv[:, 1] >= 1.0 - 1e-6))
+        if wide.size:
+            from .shift import PriorNotIdentifiedWarning
+
+            names = ", ".join(repr(plain(self.classes_[c])) for c in wide)
+            est = ", ".join(f"{float(self.target_prior_[c]):.3g}" for c in wide)
+            warnings.warn(
+                f"adapt: the {self.confidence_level:.0%} interval of the class share of "
+                f"{names} spans all of [0, 1], so the estimate ({est}) is not informative: the "
+                "unlabelled rows and this model cannot pin that share down. predict_proba moves "
+                f"only as far as the shift evidence allows (adaptation_weight_ = "
+                f"{self.adaptation_weight_:.3g}).",
+                PriorNotIdentifiedWarning,
+                stacklevel=3,
+            )
 
     def monitor(
         self,

@@ -108,3 +108,30 @@ def test_fit_silent_with_enough_rows_of_each_class():
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         PriorShiftWrapper(model, n_resamples=0).fit(X[rows], y[rows])
+
+
+def _gaussian(n, prevalence, rng, delta):
+    y = (rng.uniform(size=n) < prevalence).astype(int)
+    return rng.normal(size=(n, 1)) + delta * y[:, None], y
+
+
+@pytest.mark.parametrize(("delta", "n_new", "wide"), [(0.3, 20, True), (2.0, 2000, False)])
+def test_adapt_warns_when_interval_spans_zero_to_one(delta, n_new, wide):
+    from sklearn.linear_model import LogisticRegression
+
+    from probwrap.shift import PriorNotIdentifiedWarning
+
+    rng = np.random.default_rng(0)
+    X, y = _gaussian(2000, 0.5, rng, delta)
+    model = FrozenEstimator(LogisticRegression().fit(X, y))
+    X_lab, y_lab = _gaussian(60 if wide else 400, 0.5, rng, delta)
+    X_new, _ = _gaussian(n_new, 0.5, rng, delta)
+    with warnings.catch_warnings(record=True) as rec:
+        warnings.simplefilter("always")
+        ps = PriorShiftWrapper(model, random_state=0).fit(X_lab, y_lab).adapt(X_new)
+    iv = ps.target_prior_interval_
+    spans = bool(np.any((iv[:, 0] <= 1e-6) & (iv[:, 1] >= 1 - 1e-6)))
+    assert spans == wide
+    hits = [r for r in rec if issubclass(r.category, PriorNotIdentifiedWarning)
+            and "not informative" in str(r.message)]
+    assert len(hits) == (1 if wide else 0)

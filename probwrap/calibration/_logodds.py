@@ -17,6 +17,25 @@ __all__ = ["proba_to_log_odds", "proba_to_log_proba", "log_odds_to_proba", "DEFA
 DEFAULT_CLIP = 1e-12
 
 
+def clip_from_smallest(smallest: float) -> float:
+    """Data-chosen floor before logarithms: half the smallest non-zero held-out probability,
+    within ``[DEFAULT_CLIP, 0.25]`` (``inf``: no non-zero probability, ``DEFAULT_CLIP``).
+
+    A forest of ``n`` trees outputs multiples of ``1/n`` and gets ``1/(2n)``, so its exact 0
+    and 1 sit just beyond its own resolution; used by CalibrationWrapper (``clip=None``) and the
+    prior-shift calibration.
+
+    Examples
+    --------
+    >>> from probwrap.calibration._logodds import clip_from_smallest
+    >>> clip_from_smallest(0.02)
+    0.01
+    """
+    if not np.isfinite(smallest):
+        return DEFAULT_CLIP
+    return float(min(max(0.5 * smallest, DEFAULT_CLIP), 0.25))
+
+
 def proba_to_log_odds(proba: Any, *, clip: float = DEFAULT_CLIP) -> np.ndarray:
     """Turn positive-class probabilities into log-odds ``log(p / (1 - p))``.
 

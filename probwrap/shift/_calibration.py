@@ -16,7 +16,7 @@ from .._validation import (
     row_max,
     row_sum,
 )
-from ..calibration._logodds import DEFAULT_CLIP, proba_to_log_proba
+from ..calibration._logodds import DEFAULT_CLIP, clip_from_smallest, proba_to_log_proba
 
 __all__ = ["BiasCorrectedScaling"]
 
@@ -94,13 +94,11 @@ def heldout_clip(proba: np.ndarray, sample_weight: np.ndarray | None = None) -> 
     0 sits just beyond its own resolution (log ``1/(2n)``) instead of at log 1e-12 = -27.6,
     where one held-out row at exactly 0 would dominate the identity test and the fitted scale.
     """
-    from .._calibration_wrapper import CalibrationWrapper
-
     p = np.asarray(proba, dtype=float)
     if sample_weight is not None and p.shape[0] == np.shape(sample_weight)[0]:
         p = p[np.asarray(sample_weight) > 0]
     positive = p[p > 0]
-    return CalibrationWrapper._clip_from_smallest(float(positive.min()) if positive.size else np.inf)
+    return clip_from_smallest(float(positive.min()) if positive.size else np.inf)
 
 
 def _log_softmax(u: np.ndarray, axis: int = 1) -> np.ndarray:
