@@ -29,6 +29,7 @@ from .calibration._binning import BinningMap
 from .calibration._identity import IdentityMap
 from .calibration._isotonic import IsotonicMap
 from .calibration._logodds import DEFAULT_CLIP
+from .calibration._platt import PlattMap
 from .calibration._venn_abers import VennAbersMap
 
 __all__ = ["CalibrationWrapper", "CALIBRATION_METHODS"]
@@ -385,6 +386,14 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
 
     # -- maps ----------------------------------------------------------------------------------
     def _fit_map(self, template: CalibrationMap, scores, y_index, w, ovr=None):
+        if (
+            type(template) is PlattMap
+            and self.response_ != "decision_function"
+            and not isinstance(self.method, CalibrationMap)
+        ):
+            # log-odds from probabilities: Platt's map clips them at half its output floor, so
+            # that rows at (or within 1e-12 of) 0 or 1 cannot flatten its slope (see PlattMap)
+            template = clone(template).set_params(limit_scores=True)
         if scores.ndim == 1:
             return clone(template).fit(self._map_input(template, scores), y_index, sample_weight=w)
         if template.supports_multiclass:

@@ -85,7 +85,7 @@ def test_layout_and_metadata():
     assert d["score_scale"] == "proba"
     assert d["classes"] == [1, 2] and d["classes_kind"] == "int"
     assert d["metadata"] == {"source": "held-out"}
-    assert d["settings"] == {"smooth_targets": True}
+    assert d["settings"] == {"smooth_targets": True, "limit_scores": False}
     assert isinstance(d["fitted"]["slope_"], float)
 
 
