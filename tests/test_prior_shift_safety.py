@@ -600,6 +600,46 @@ def test_score_test_rejects_at_about_its_nominal_rate_without_shift():
     assert 4 <= rejections <= 27
 
 
+def test_score_interval_endpoint_is_at_students_t_quantile_with_satterthwaite_df():
+    # Reference: at an endpoint pi of the score interval the two-sample statistic equals the
+    # squared Student t quantile (scipy.stats.t.ppf) at Satterthwaite's (1946) degrees of
+    # freedom of its three independent variance components (unlabelled rows, labelled rows of
+    # each class; Welch 1947), computed here from the formula of score_interval's docstring.
+    # Few labelled rows (30) make the degrees of freedom small, so the interval is wider than
+    # with the chi-square cut-off (small_sample=False), which it contains.
+    from scipy.stats import t as t_dist
+
+    rng = np.random.default_rng(46)
+    p_s, y_s = binary_gaussian(30, 0.4, rng, sep=1.2)
+    p_t, _ = binary_gaussian(400, 0.25, rng, sep=1.2)
+    src = np.bincount(y_s, minlength=2) / 30
+    (lo, hi), ok = score_interval(p_t, p_s, y_s, src)
+    (lo_c, hi_c), _ = score_interval(p_t, p_s, y_s, src, small_sample=False)
+    assert ok and lo < lo_c < hi_c < hi
+
+    def t_and_df(pi):
+        def u(p):
+            q = p / src
+            return (q[:, 1] - q[:, 0]) / ((1 - pi) * q[:, 0] + pi * q[:, 1])
+
+        u_t = u(p_t)
+        comps = [(u_t.var() / (u_t.size - 1), u_t.size)]
+        m_s = 0.0
+        for c, share in ((0, 1 - pi), (1, pi)):
+            u_c = u(p_s[y_s == c])
+            m_s += share * u_c.mean()
+            comps.append((share**2 * u_c.var() / (u_c.size - 1), u_c.size))
+        var = sum(v for v, _ in comps)
+        df = var**2 / sum(v**2 / (n - 1) for v, n in comps)
+        return (u_t.mean() - m_s) / np.sqrt(var), df
+
+    for end in (lo, hi):
+        t_val, df = t_and_df(end)
+        assert df < 60  # few labelled rows: far from the normal limit
+        # rtol: the endpoint is found by Brent's method to 1e-10 in the prior
+        assert abs(t_val) == pytest.approx(t_dist.ppf(0.975, df), rel=1e-6)
+
+
 def test_score_interval_at_source_prior_inverts_the_score_test():
     # Consistency test: the interval excludes the source prior exactly when the test rejects.
     rng = np.random.default_rng(15)
