@@ -487,6 +487,8 @@ def summary(x):
         return np.array([x], float)
     vals = []
     for f in getattr(x, "_fields", None) or getattr(x, "__dataclass_fields__", {}):
+        if f == "n_iter":  # how a solver got there is not a result
+            continue
         v = getattr(x, f)
         if np.isscalar(v) and not isinstance(v, str):
             vals.append(float(v))
