@@ -18,7 +18,12 @@ Four parts, each printing its targets beside the measured values.
    share); ``cutoff``: the mean evidence cutoff the wrapper chose (``max_harm``); ``sd/shift``: the
    spread of the maximum-likelihood estimate over the size of the shift; ``sd/CR``: that spread over
    the Cramer-Rao spread of the unlabelled rows. Also printed: the pooled share (total gain over
-   total gap) and the mean share under other settings of the rule on the same draws. Targets: no-shift
+   total gap), the standard error of each cell's share (``se``, delta method over the
+   repetitions) with how much the small-gap cells weigh in the mean, and the mean share under
+   other settings of the rule on the same draws, including posterior-predictive ('integrated')
+   probabilities: the re-weighted posteriors averaged (9-point Gauss-Hermite) over a normal
+   distribution of the prevalence around the applied prior with the rule's posterior variance
+   ``w s^2`` (on the prevalence or the logit scale). Targets: no-shift
    cells adapted/none <= 1.02 in every cell; shifted cells close >= 80 % of the gap on average;
    no collapse without a warning.
 2. **Coverage** of the default interval at 90 % and 95 % for n_labelled, n_unlabelled in {500,
@@ -103,7 +108,7 @@ def evidence(quick: bool) -> None:
     models = {"weak": 0.74, "strong": 2.5}
     print(f"1. Evidence: {n_lab} labelled, {n_unl} unlabelled rows, {reps} repetitions per cell")
     head = (f"{'model':>6} {'AUC':>5} {'prev':>5} {'shift':>5} | {'|err|':>7} {'LL none':>8} "
-            f"{'LL adapt':>8} {'LL orcl':>8} {'ad/none':>7} {'ad/orcl':>7} {'closed':>7} "
+            f"{'LL adapt':>8} {'LL orcl':>8} {'ad/none':>7} {'ad/orcl':>7} {'closed':>7} {'se':>5} "
             f"{'best w':>7} {'cutoff':>6} {'cov95':>6} {'detect':>6} {'coll w/':>7} "
             f"{'coll w/o':>8} {'sd/shift':>8} {'sd/CR':>6}")
     print(head)
@@ -114,10 +119,30 @@ def evidence(quick: bool) -> None:
     alt_worst = np.zeros(len(ALTERNATIVES))
     alt_closed = [[] for _ in ALTERNATIVES]
     shares = np.linspace(0.0, 1.0, 21)
+    gh_nodes, gh_weights = np.polynomial.hermite_e.hermegauss(9)  # N(0, 1) quadrature
+    gh_weights = gh_weights / gh_weights.sum()
+    integ_closed = [[], []]  # posterior-predictive on the prevalence / logit scale
+    integ_worst = np.zeros(2)
+    cell_se = []
 
     def log_loss_at(y_new, none, src, t):
         odds = (none[:, 1] / none[:, 0]) * (t / (1 - t)) / (src[1] / src[0])
         return float(np.mean(np.log1p(odds ** np.where(y_new == 1, -1.0, 1.0))))
+
+    def integrated_log_loss(y_new, none, src, centre, sd, logit_scale):
+        """Log loss of the re-weighted posteriors averaged over a normal distribution of the
+        prevalence (mean ``centre``, sd ``sd``; on the logit scale by the delta method),
+        9-point Gauss-Hermite: the posterior-predictive probabilities."""
+        if logit_scale:
+            lc = np.log(centre / (1 - centre)) + sd / (centre * (1 - centre)) * gh_nodes
+            ts = 1.0 / (1.0 + np.exp(-lc))
+        else:
+            ts = np.clip(centre + sd * gh_nodes, 1e-6, 1 - 1e-6)
+        base = none[:, 1] / none[:, 0] / (src[1] / src[0])
+        p1 = sum(g * (base * t / (1 - t)) / (1 + base * t / (1 - t))
+                 for g, t in zip(gh_weights, ts, strict=True))
+        p_true = np.where(y_new == 1, p1, 1 - p1)
+        return float(-np.mean(np.log(np.maximum(p_true, 1e-300))))
 
     for name, delta in models.items():
         auc = norm.cdf(delta / np.sqrt(2))
@@ -129,7 +154,7 @@ def evidence(quick: bool) -> None:
                 if target >= 1.0:
                     continue
                 err, ll, cover, detect, warned, unwarned = [], [], [], [], 0, 0
-                fixed, cutoffs, ml_est, cr_sd, alt_ll = [], [], [], [], []
+                fixed, cutoffs, ml_est, cr_sd, alt_ll, integ_ll = [], [], [], [], [], []
                 for _ in range(reps):
                     X, y = gaussian(n_lab, prev, rng, delta)
                     X_new, y_new = gaussian(n_unl, target, rng, delta)
@@ -160,6 +185,16 @@ def evidence(quick: bool) -> None:
                             w = max(0.0, 1.0 - c / stat) if stat > 0 else 0.0
                             row.append(log_loss_at(y_new, none, src, src[1] + w * (est - src[1])))
                     alt_ll.append(row)
+                    # posterior-predictive: the applied share w of the change has, under the
+                    # normal prior of the empirical-Bayes rule, posterior variance w s^2 (s the
+                    # estimate's standard error, from the 95 % score interval's width)
+                    w_app = wrapper.adaptation_weight_
+                    lo_i, hi_i = wrapper.target_prior_interval_[1]
+                    sd_post = np.sqrt(w_app) * (hi_i - lo_i) / (2 * norm.ppf(0.975))
+                    centre = wrapper.applied_prior_[1]
+                    integ_ll.append([
+                        integrated_log_loss(y_new, none, src, centre, sd_post, scale)
+                        if w_app > 0 else ll[-1][1] for scale in (False, True)])
                     ml_est.append(res.ml_prior[1])
                     cr_sd.append(_fisher_sd(none[:, 1], src[1], target))
                     err.append(abs(wrapper.target_prior_[1] - target))
@@ -174,14 +209,25 @@ def evidence(quick: bool) -> None:
                             unwarned += 1
                 m = np.mean(ll, axis=0)
                 m_alt = np.mean(alt_ll, axis=0)
+                m_int = np.mean(integ_ll, axis=0)
                 ratio_none, ratio_oracle = m[1] / m[0], m[1] / m[2]
                 gap = m[0] - m[2]
                 closed = (m[0] - m[1]) / gap if shift != 1.0 and gap > 0 else np.nan
                 best = np.nan
+                se = np.nan
                 if shift == 1.0:
                     worst_noshift = max(worst_noshift, ratio_none)
                     alt_worst = np.maximum(alt_worst, m_alt / m[0])
+                    integ_worst = np.maximum(integ_worst, m_int / m[0])
                 else:
+                    # standard error of the share closed (ratio of two means over the
+                    # repetitions, delta method)
+                    arr = np.asarray(ll)
+                    gain_r, gap_r = arr[:, 0] - arr[:, 1], arr[:, 0] - arr[:, 2]
+                    se = float(np.std(gain_r - closed * gap_r, ddof=1) / np.sqrt(reps) / gap)
+                    cell_se.append(se)
+                    for i in range(2):
+                        integ_closed[i].append((m[0] - m_int[i]) / gap)
                     closures.append(closed)
                     gaps.append(gap)
                     gains.append(m[0] - m[1])
@@ -193,11 +239,12 @@ def evidence(quick: bool) -> None:
                 sd_ml = float(np.std(ml_est))
                 noise = sd_ml / abs(target - prev) if shift != 1.0 else np.nan
                 closed_txt = f"{closed:7.1%}" if np.isfinite(closed) else f"{'-':>7}"
+                se_txt = f"{se:5.1%}" if np.isfinite(se) else f"{'-':>5}"
                 best_txt = f"{best:7.1%}" if np.isfinite(best) else f"{'-':>7}"
                 noise_txt = f"{noise:8.2f}" if np.isfinite(noise) else f"{'-':>8}"
                 print(f"{name:>6} {auc:5.2f} {prev:5.0%} {shift:5.1f} | {np.mean(err):7.4f} "
                       f"{m[0]:8.4f} {m[1]:8.4f} {m[2]:8.4f} {ratio_none:7.3f} {ratio_oracle:7.3f} "
-                      f"{closed_txt} {best_txt} {np.mean(cutoffs):6.2f} "
+                      f"{closed_txt} {se_txt} {best_txt} {np.mean(cutoffs):6.2f} "
                       f"{np.mean(cover):6.1%} {np.mean(detect):6.1%} "
                       f"{warned:7d} {unwarned:8d} {noise_txt} {sd_ml / np.mean(cr_sd):6.2f}")
     mean_closed = float(np.mean(closures))
@@ -208,6 +255,18 @@ def evidence(quick: bool) -> None:
           f"shares); measured {mean_closed:.1%} -> {'met' if mean_closed >= 0.8 else 'MISSED'}")
     print(f"   (pooled instead, total gain over total gap: {np.sum(gains) / np.sum(gaps):.1%}; "
           f"the issue's target is the mean of the per-cell shares)")
+    se_arr, cl_arr, gap_arr = np.asarray(cell_se), np.asarray(closures), np.asarray(gaps)
+    noisy = se_arr > 0.05
+    print(f"   per-cell noise: the standard error of a cell's share ('se') is "
+          f"{se_arr.min():.1%}-{se_arr.max():.1%}; {int(noisy.sum())} of {se_arr.size} cells "
+          f"have se > 5 points (their gaps {gap_arr[noisy].min() if noisy.any() else 0:.4f}-"
+          f"{gap_arr[noisy].max() if noisy.any() else 0:.4f} nats), and the standard error of "
+          f"the mean over cells is {np.sqrt(np.sum(se_arr**2)) / se_arr.size:.1%}")
+    tiny = gap_arr < 0.005
+    print(f"   cells with a gap under 0.005 nats: {int(tiny.sum())} (mean share there "
+          f"{cl_arr[tiny].mean() if tiny.any() else np.nan:.1%}); mean over the other cells "
+          f"{cl_arr[~tiny].mean():.1%}; cells never moved (share exactly 0): "
+          f"{int(np.sum(cl_arr == 0))}")
     print(f"   bound ('best w'): applying the best fixed share of the estimate in each cell, "
           f"chosen knowing the true shift, closes {mean_bound:.1%} on average.")
     hard = [c for c, b in zip(closures, bounds, strict=True) if b < 0.6]
@@ -221,7 +280,12 @@ def evidence(quick: bool) -> None:
     print("   other settings of the rule on the same draws (mean share closed; worst no-shift "
           "adapted/none):")
     for (label, *_), closed_i, worst_i in zip(ALTERNATIVES, alt_closed, alt_worst, strict=True):
-        print(f"     {label:<18} {np.mean(closed_i):6.1%}  {worst_i:6.3f}"
+        print(f"     {label:<28} {np.mean(closed_i):6.1%}  {worst_i:6.3f}"
+              f"{'' if worst_i <= 1.02 else '  (breaks the no-shift target)'}")
+    for label, closed_i, worst_i in zip(
+            ("integrated, prevalence scale", "integrated, logit scale"), integ_closed,
+            integ_worst, strict=True):
+        print(f"     {label:<28} {np.mean(closed_i):6.1%}  {worst_i:6.3f}"
               f"{'' if worst_i <= 1.02 else '  (breaks the no-shift target)'}")
     print(f"target: no collapse without a warning; measured {silent} -> "
           f"{'met' if silent == 0 else 'MISSED'}\n")

@@ -179,25 +179,22 @@ class _AutoChoice:
                 return preferred
         return min(names, key=lambda nm: (CALIBRATION_METHODS[nm]().complexity, names.index(nm)))
 
-    def _score_fold(self, name, scores, ovr, y, w, f, test, state) -> str | None:
+    def _score_fold(self, name, part, f, state) -> str | None:
         """Fit one candidate on the rows outside fold ``f`` and score the rows inside it.
 
-        Fills ``state["per_row"]`` (log loss per row); warnings raised by the fit are collected
-        in ``state["seen"]`` (not shown one by one) and a fit that reaches a boundary of its
+        ``part`` holds the fold's rows, split once for all candidates: ``(train, test, mask)``
+        with ``train = (scores, ovr, y, w)`` (``ovr`` the one-vs-rest scores or None),
+        ``test = (scores, ovr, y)`` and ``mask`` the fold's rows among all. Fills
+        ``state["per_row"]`` (log loss per row); warnings raised by the fit are collected in
+        ``state["seen"]`` (not shown one by one) and a fit that reaches a boundary of its
         parameter space is recorded in ``state["boundary"]``. Returns the error text when the
         fit fails, else None.
         """
-        train = ~test
+        (s_tr, ovr_tr, y_tr, w_tr), (s_te, ovr_te, y_te), mask = part
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             try:
-                cal = self._fit_map(
-                    CALIBRATION_METHODS[name](),
-                    scores[train],
-                    y[train],
-                    w[train],
-                    None if ovr is None else ovr[train],
-                )
+                cal = self._fit_map(CALIBRATION_METHODS[name](), s_tr, y_tr, w_tr, ovr_tr)
             except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
                 return f"failed in fold {f}: {exc}"
         for item in caught:
@@ -210,9 +207,9 @@ class _AutoChoice:
             hit = _boundary_of(cal)
             if hit is not None:
                 state["boundary"] = f"fold {f}: {hit}"
-        q = self._apply_map(cal, scores[test], None if ovr is None else ovr[test])
-        state["per_row"][test] = -np.log(
-            np.maximum(q[np.arange(q.shape[0]), y[test]], _LOG_LOSS_FLOOR)
+        q = self._apply_map(cal, s_te, ovr_te)
+        state["per_row"][mask] = -np.log(
+            np.maximum(q[np.arange(q.shape[0]), y_te], _LOG_LOSS_FLOOR)
         )
         return None
 
@@ -229,8 +226,14 @@ class _AutoChoice:
         }
         active = list(names)
         for i, (f, test) in enumerate(fold_masks):
+            train = ~test
+            part = (
+                (scores[train], None if ovr is None else ovr[train], y[train], w[train]),
+                (scores[test], None if ovr is None else ovr[test], y[test]),
+                test,
+            )  # the fold's rows, copied once for all candidates
             for name in list(active):
-                error = self._score_fold(name, scores, ovr, y, w, f, test, states[name])
+                error = self._score_fold(name, part, f, states[name])
                 if error is not None:
                     notes[name] = error
                     active.remove(name)

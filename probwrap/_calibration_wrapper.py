@@ -7,7 +7,6 @@ import warnings
 from typing import Any
 
 import numpy as np
-from scipy.special import logsumexp
 from sklearn.base import clone
 from sklearn.utils.metaestimators import available_if
 
@@ -38,6 +37,29 @@ _ORDER_BASED = (IsotonicMap, BinningMap, VennAbersMap)
 
 #: Exact zero probabilities become this (the smallest positive float) before taking logs.
 _TINY = np.nextafter(0.0, 1.0)
+
+
+def _log_odds_against_rest(scores: np.ndarray) -> np.ndarray:
+    """``z_k - log(sum_{j != k} exp(z_j))`` for every column ``k`` of ``scores`` (n, k >= 3).
+
+    Two passes of exponentials over the scores instead of a log-sum-exp per class: every class
+    but the row's largest takes the sum of all exponentials (shifted by the row maximum) less
+    its own, which keeps the largest's term of 1, so the difference loses nothing; the largest
+    class sums the others shifted by the second largest.
+    """
+    z = np.array(scores.T, dtype=float, order="C")  # one row per class: contiguous reductions
+    rows = np.arange(z.shape[1])
+    top = z.argmax(axis=0)
+    m1 = z[top, rows]
+    e = np.exp(z - m1)
+    rest = e.sum(axis=0) - e  # sum over the other classes, each at least 1 except the top's
+    with np.errstate(divide="ignore"):  # the top's entry may be 0 here; it is replaced below
+        lse = m1 + np.log(rest)
+    z2 = z.copy()
+    z2[top, rows] = -np.inf
+    m2 = z2.max(axis=0)
+    lse[top, rows] = m2 + np.log(np.exp(z2 - m2).sum(axis=0))
+    return (z - lse).T
 
 
 def _kept_probability_map() -> IdentityMap:
@@ -365,10 +387,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         """Per-class binary scores (log-odds of each class against the rest)."""
         if self.response_ == "decision_function":
             return scores
-        out = np.empty_like(scores)
-        for k in range(scores.shape[1]):
-            out[:, k] = scores[:, k] - logsumexp(np.delete(scores, k, axis=1), axis=1)
-        return out
+        return _log_odds_against_rest(scores)
 
     def _map_input(self, cal: CalibrationMap, scores: np.ndarray) -> np.ndarray:
         """What a map sees: order-based maps the full-resolution scores; parametric maps, for
@@ -481,18 +500,36 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         ]
         q = np.column_stack(cols)
         if kept.any():
-            # classes without calibration rows keep the model's own probability; the
-            # calibrated classes share the rest in proportion to their calibrated values
-            rest = np.maximum(1.0 - q[:, kept].sum(axis=1, keepdims=True), 0.0)
-            if not kept.all():
-                part = q[:, ~kept]
-                q[:, ~kept] = part / part.sum(axis=1, keepdims=True) * rest
-            q = np.maximum(q, self._clip_value())
-            return q / q.sum(axis=1, keepdims=True)
+            return self._share_with_kept_classes(q, kept)
         total = q.sum(axis=1, keepdims=True)
         uniform = np.full_like(q, 1.0 / q.shape[1])
         with np.errstate(invalid="ignore", divide="ignore"):
             return np.where(total > 0, q / np.where(total > 0, total, 1.0), uniform)
+
+    def _share_with_kept_classes(self, q: np.ndarray, kept: np.ndarray) -> np.ndarray:
+        """Rows of one-vs-rest outputs ``q`` where the classes ``kept`` (no calibration rows)
+        hold the model's own probability.
+
+        A kept class keeps the model's probability, raised to ``clip_`` only where it is below
+        (an exact 0 of a forest); the calibrated classes share the rest of the row in
+        proportion to their calibrated one-vs-rest values, which their maps' floors keep
+        positive. Only where the kept classes would leave the calibrated ones less than
+        ``clip_`` each are the kept probabilities scaled down to leave them that. When every
+        class is kept (a single class present), the model's probabilities are floored at
+        ``clip_`` and renormalised.
+        """
+        clip = self._clip_value()
+        q = q.copy()
+        q[:, kept] = np.maximum(q[:, kept], clip)
+        if kept.all():
+            return q / q.sum(axis=1, keepdims=True)
+        room = 1.0 - clip * float(np.count_nonzero(~kept))
+        held = q[:, kept].sum(axis=1, keepdims=True)
+        q[:, kept] *= np.minimum(1.0, room / held)
+        rest = 1.0 - q[:, kept].sum(axis=1, keepdims=True)
+        part = q[:, ~kept]
+        q[:, ~kept] = part / part.sum(axis=1, keepdims=True) * rest
+        return q
 
     # -- prediction ----------------------------------------------------------------------------
     def _calibrated(self, X: Any) -> np.ndarray:

@@ -384,14 +384,20 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
                 self._interval_inputs = ("summary", summary, matrix, budget_share)
         if ho is not None:
             if self._cutoff_mode:
-                chosen = (p > self.cutoff_).astype(np.intp)  # (the rule of _decide)
+                # the rule of _decide, p > cutoff_; each row's cost looked up by a one-byte
+                # (class, action) code: the same values as matrix[y, chosen] without two
+                # index arrays as long as the rows
+                code = ho.y_index.astype(np.int8) * np.int8(2)
+                code += p > self.cutoff_
+                realised = np.take(matrix.ravel(), code)
+                del code
             else:
                 chosen = self._decide(proba, matrix if row_costs is None else row_costs)
-            realised = (
-                matrix[ho.y_index, chosen]
-                if row_costs is None
-                else row_costs[np.arange(chosen.shape[0]), ho.y_index, chosen]
-            )
+                realised = (
+                    matrix[ho.y_index, chosen]
+                    if row_costs is None
+                    else row_costs[np.arange(chosen.shape[0]), ho.y_index, chosen]
+                )
             w = ho.sample_weight
             self.heldout_cost_ = float(np.dot(w, realised) / w.sum())
         return self

@@ -76,6 +76,38 @@ def check_fitted(estimator: Any, attribute: str) -> None:
         )
 
 
+# Rows per call when a frozen model predicts a large NumPy array at fit time (see below).
+PREDICT_CHUNK_ROWS = 65_536
+
+
+def _predict_in_chunks(method: Any, X: Any) -> np.ndarray:
+    """``np.asarray(method(X), dtype=float)``, called on fixed blocks of rows of a large array.
+
+    A model's own ``predict_proba`` holds several arrays as long as the rows at once (a
+    ``LogisticRegression``: the margins, their exponentials and the two columns, 4x the output's
+    positive column). Called on blocks of ``PREDICT_CHUNK_ROWS`` rows written into one output
+    array, the peak is the output plus one block's worth. Only for 2-d NumPy arrays of more than
+    two blocks (other inputs, which may not slice by rows, are predicted in one call). The blocks
+    are fixed, so the result never depends on anything but the rows; for scikit-learn's models
+    it is bit for bit the one-call result (rows are predicted independently; a test checks
+    linear, tree, naive Bayes, discriminant and neural-network models), and a model whose
+    row outputs depend on the other rows in the call would be called the same way every time.
+    """
+    n = X.shape[0] if isinstance(X, np.ndarray) and X.ndim == 2 else 0
+    if n <= 2 * PREDICT_CHUNK_ROWS:
+        return np.asarray(method(X), dtype=float)
+    first = np.asarray(method(X[:PREDICT_CHUNK_ROWS]), dtype=float)
+    if first.shape[0] != PREDICT_CHUNK_ROWS:  # not one output row per input row: one call
+        return np.asarray(method(X), dtype=float)
+    out = np.empty((n,) + first.shape[1:])
+    out[:PREDICT_CHUNK_ROWS] = first
+    del first
+    for start in range(PREDICT_CHUNK_ROWS, n, PREDICT_CHUNK_ROWS):
+        stop = min(start + PREDICT_CHUNK_ROWS, n)
+        out[start:stop] = np.asarray(method(X[start:stop]), dtype=float)
+    return out
+
+
 def is_frozen(estimator: Any) -> bool:
     """Whether ``estimator`` is an already-fitted :class:`~sklearn.frozen.FrozenEstimator`."""
     return isinstance(estimator, FrozenEstimator)
@@ -181,7 +213,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                 )
             # the labels wait as one-byte (or two-byte) codes while the model predicts
             y_index = y_index.astype(np.min_scalar_type(est_classes.shape[0] - 1))
-            values = np.asarray(getattr(estimator, response)(X), dtype=float)
+            values = _predict_in_chunks(getattr(estimator, response), X)
             # every row is in no fold: a read-only view of one value, not n of them
             fold = np.broadcast_to(np.array(-1, dtype=int), (n,))
             n_folds = 0

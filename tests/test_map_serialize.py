@@ -270,3 +270,17 @@ def test_deep_or_self_containing_metadata_is_refused_without_recursion_error():
         map_to_dict(IsotonicMap().fit(*_data()), score_scale="proba", note=loop)
     with pytest.raises(ValueError, match="finite"):
         map_to_dict(IsotonicMap().fit(*_data()), score_scale="proba", note=[1.0, float("inf")])
+
+
+def test_one_vs_rest_venn_abers_map_is_not_saved_alone():
+    # its merge uses p0 + (p1 - p0) / (k - 1): saved alone it would predict as a binary map
+    from probwrap.calibration._base import one_vs_rest_copy
+
+    s = np.array([-2.0, -1.0, 0.0, 1.0, 2.0, 3.0])
+    y = np.array([0, 0, 1, 0, 1, 1])
+    m = one_vs_rest_copy(VennAbersMap(), 3).fit(s, y)
+    with pytest.raises(ValueError, match="one-vs-rest Venn-Abers"):
+        map_to_dict(m, score_scale="log-odds")
+    binary = one_vs_rest_copy(VennAbersMap(), 2).fit(s, y)
+    again = map_from_dict(map_to_dict(binary, score_scale="log-odds"))
+    np.testing.assert_array_equal(again.predict(s), binary.predict(s))

@@ -200,6 +200,9 @@ def test_all_scores_equal_gives_the_base_rate(cls):
     elif cls is VennAbersMap:
         # the test point (weight 1) joins the group: p0 = 6 / 11, p1 = 7 / 11
         np.testing.assert_allclose(out[1], (7 / 11) / (1 - 6 / 11 + 7 / 11))
+    elif cls is BinningMap:
+        # one bin, its prior (worth 2 rows) centred on the model's expit(0) = 0.5
+        np.testing.assert_allclose(out, (6 + 2 * 0.5) / (10 + 2), atol=1e-10)
     else:
         np.testing.assert_allclose(out, 0.6, atol=1e-10)
 

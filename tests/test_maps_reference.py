@@ -362,17 +362,24 @@ def test_binning_hand_worked_example():
     # 8 rows, weights 1,1,2,1,1,1,1,2 (total 10), n_bins=2, prior_strength=2.
     # Cumulative weight before each distinct score: 0,1,2,4,5,6,7,8; mass midpoints divided by
     # 10: 0.05,0.15,0.3,0.45,0.55,0.65,0.75,0.9 -> bins 0,0,0,0,1,1,1,1.
-    # Overall rate m = (1*0+1*0+2*1+1*0+1*1+1*0+1*1+2*1) / 10 = 6 / 10 = 0.6.
-    # Bin 0: weight 5, positives 2 -> (2 + 0.6*2) / (5 + 2) = 3.2 / 7.
-    # Bin 1: weight 5, positives 4 -> (4 + 0.6*2) / (5 + 2) = 5.2 / 7.
+    # Each bin's Beta prior is centred on the model's mean probability in the bin (Naeini,
+    # Cooper & Hauskrecht 2015 centre it on the model's score in the bin): with scipy's expit,
+    # c0 = (e(0) + e(1) + 2 e(2) + e(3)) / 5 and c1 = (e(4) + e(5) + e(6) + 2 e(7)) / 5.
+    # Bin 0: weight 5, positives 2 -> (2 + 2 c0) / (5 + 2).
+    # Bin 1: weight 5, positives 4 -> (4 + 2 c1) / (5 + 2).
     # Edge: half-way between 3 and 4 -> 3.5.
+    from scipy.special import expit
+
     s = np.arange(8.0)
     y = np.array([0, 0, 1, 0, 1, 0, 1, 1])
     w = np.array([1, 1, 2, 1, 1, 1, 1, 2.0])
+    c0 = (expit(0.0) + expit(1.0) + 2 * expit(2.0) + expit(3.0)) / 5
+    c1 = (expit(4.0) + expit(5.0) + expit(6.0) + 2 * expit(7.0)) / 5
+    v = [(2 + 2 * c0) / 7, (4 + 2 * c1) / 7]
     m = BinningMap(n_bins=2, prior_strength=2.0).fit(s, y, sample_weight=w)
     np.testing.assert_allclose(m.edges_, [3.5])
-    np.testing.assert_allclose(m.values_, [3.2 / 7, 5.2 / 7])
-    np.testing.assert_allclose(m.predict([-10.0, 3.49, 3.5, 99.0]), [3.2 / 7, 3.2 / 7, 5.2 / 7, 5.2 / 7])
+    np.testing.assert_allclose(m.values_, v, rtol=1e-12)
+    np.testing.assert_allclose(m.predict([-10.0, 3.49, 3.5, 99.0]), [v[0], v[0], v[1], v[1]], rtol=1e-12)
     # prior_strength=0 gives the raw weighted positive rate per bin: 2/5 and 4/5
     raw = BinningMap(n_bins=2, prior_strength=0.0).fit(s, y, sample_weight=w)
     np.testing.assert_allclose(raw.values_, [0.4, 0.8])
@@ -398,8 +405,11 @@ def test_binning_counts_match_numpy_histogram(cancer_scores):
     hist_w, _ = np.histogram(s, bins=bins, weights=w)
     hist_pos, _ = np.histogram(s, bins=bins, weights=w * y)
     np.testing.assert_allclose(m.bin_weights_, hist_w)
-    rate = (w @ y) / w.sum()
-    np.testing.assert_allclose(m.values_, (hist_pos + 2.0 * rate) / (hist_w + 2.0))
+    # each bin's prior centre: the weighted mean of scipy's expit(s) over the bin
+    from scipy.special import expit
+
+    hist_p, _ = np.histogram(s, bins=bins, weights=w * expit(s))
+    np.testing.assert_allclose(m.values_, (hist_pos + 2.0 * hist_p / hist_w) / (hist_w + 2.0))
     # equal mass: no bin is further than the heaviest single row from a tenth of the total
     assert np.all(np.abs(hist_w - w.sum() / 10) <= w.max())
 
@@ -432,6 +442,31 @@ def test_venn_abers_matches_brute_force_refits():
     # merged probability p1 / (1 - p0 + p1): the log-loss merge of Vovk, Petej & Fedorova
     # (2015) (formula from the paper; equation number not quoted)
     np.testing.assert_allclose(m.predict(test), ref[:, 1] / (1 - ref[:, 0] + ref[:, 1]), atol=1e-10)
+
+
+def test_venn_abers_one_vs_rest_merge_shares_the_width_among_the_other_classes():
+    # One-vs-rest for one of k = 4 classes: the interval is still the paper's (scikit-learn's
+    # IsotonicRegression refitted with the test point labelled 0 and 1), and the merge uses
+    # p0 + (p1 - p0) / (k - 1) in place of p1 (docs/calibration.md, "One-vs-rest with k
+    # classes"); one_vs_rest_copy(map, 2) is the paper's binary merge.
+    from probwrap.calibration._base import one_vs_rest_copy
+
+    rng = np.random.default_rng(11)
+    s = np.round(rng.normal(size=60) * 2, 1)
+    y = (rng.random(60) < expit(s - 1)).astype(float)
+    # exact ties and points half-way between the 0.1 grid (scikit-learn merges x values that
+    # differ by rounding only, so near-ties are avoided)
+    test = np.concatenate([[-50.0], np.unique(s)[::3], np.linspace(-8, 8, 41) + 0.05, [50.0]])
+    ref = _brute_venn_abers(s, y, np.ones_like(s), test)
+    m4 = one_vs_rest_copy(VennAbersMap(), 4).fit(s, y)
+    np.testing.assert_allclose(m4.predict_interval(test), ref, atol=1e-10)
+    p1 = ref[:, 0] + (ref[:, 1] - ref[:, 0]) / 3
+    np.testing.assert_allclose(m4.predict(test), p1 / (1 - ref[:, 0] + p1), atol=1e-10)
+    # below every calibration score p0 = 0: the merge there is a third of p1's share
+    assert ref[0, 0] == 0 and ref[0, 1] > 0
+    m2 = one_vs_rest_copy(VennAbersMap(), 2).fit(s, y)
+    np.testing.assert_allclose(m2.predict(test), ref[:, 1] / (1 - ref[:, 0] + ref[:, 1]), atol=1e-10)
+    assert m4.predict(test)[0] < m2.predict(test)[0]
 
 
 def test_venn_abers_bundled_data_matches_brute_force(cancer_scores):

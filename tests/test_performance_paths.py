@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 from scipy.optimize import isotonic_regression
 from scipy.special import expit
 from sklearn.isotonic import IsotonicRegression
@@ -133,3 +134,86 @@ def test_venn_abers_compact_pairs_equal_two_isotonic_fits_per_test_score():
             pair.append(ref.predict([t])[0])
         # 1e-12: the order of summation inside the two PAV implementations
         np.testing.assert_allclose(got[j], pair, atol=1e-12)
+
+
+def test_row_reductions_equal_numpy_bit_for_bit():
+    # consistency test: the column loops behind the prediction fast path (issue 16, point 6)
+    # against NumPy's own reductions, for every number of columns either side of the cut-over
+    from probwrap._validation import row_max, row_sum
+
+    rng = np.random.default_rng(16)
+    for k in range(1, 11):
+        for order in "CF":
+            for dtype in (np.float64, np.float32):
+                a = np.asarray(rng.random((257, k)) * 10.0 ** rng.integers(-8, 8, (257, k)),
+                               dtype=dtype, order=order)
+                a[3, 0] = np.nan
+                a[5, -1] = -0.0
+                for keep in (False, True):
+                    for ours, ref in ((row_sum(a, keep), a.sum(axis=1, keepdims=keep)),
+                                      (row_max(a, keep), a.max(axis=1, keepdims=keep))):
+                        assert ours.dtype == ref.dtype and ours.shape == ref.shape
+                        np.testing.assert_array_equal(ours, ref)
+                        assert np.array_equal(np.signbit(ours), np.signbit(ref))
+
+
+def test_check_proba_fast_path_keeps_its_messages():
+
+    from probwrap._validation import check_proba
+
+    good = np.array([[0.2, 0.8], [1.0, 0.0]])
+    assert check_proba(good, ndim=2) is not None
+    for bad, message in (
+        ([[np.nan, 1.0]], "contains NaN or infinite values"),
+        ([[np.inf, 0.0]], "contains NaN or infinite values"),
+        ([[-0.1, 1.1]], r"in \[0, 1\]; got values from -0.1 to 1.1"),
+        ([[0.2, 0.7], [0.5, 0.5]], "row 0 sums to 0.9"),
+        ([[0.5, 0.5], [0.5, 0.5 + 2e-6]], "row 1 sums to 1"),
+    ):
+        with pytest.raises(ValueError, match=message):
+            check_proba(np.array(bad), name="proba")
+    check_proba(np.array([[0.5, 0.5 + 5e-7]]))  # within the 1e-6 tolerance
+
+
+def test_frozen_model_predicted_in_row_blocks_gives_the_one_call_result(monkeypatch):
+    # consistency test: CostPolicyWrapper.fit predicts a large held-out array block by block
+    # (issue 16, point 7 memory); for scikit-learn's models the rows come out bit for bit as in
+    # one call, and the fitted wrapper is the same
+    import warnings
+
+    from sklearn.discriminant_analysis import LinearDiscriminantAnalysis
+    from sklearn.ensemble import HistGradientBoostingClassifier, RandomForestClassifier
+    from sklearn.frozen import FrozenEstimator
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.naive_bayes import GaussianNB
+    from sklearn.neural_network import MLPClassifier
+
+    import probwrap._heldout as heldout
+    from probwrap import CostPolicyWrapper
+
+    rng = np.random.default_rng(7)
+    X = rng.normal(size=(5000, 6))
+    y = (X[:, 0] + rng.normal(size=5000) > 0.5).astype(int)
+    models = [LogisticRegression(), HistGradientBoostingClassifier(max_iter=10),
+              RandomForestClassifier(n_estimators=5, max_depth=5, random_state=0), GaussianNB(),
+              LinearDiscriminantAnalysis(), MLPClassifier(hidden_layer_sizes=(8,), max_iter=30,
+                                                          random_state=0)]
+    for model in models:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            model.fit(X[:1000], y[:1000])
+        whole = model.predict_proba(X)
+        monkeypatch.setattr(heldout, "PREDICT_CHUNK_ROWS", 700)  # 8 blocks, the last short
+        blocks = heldout._predict_in_chunks(model.predict_proba, X)
+        np.testing.assert_array_equal(blocks, whole)
+        fitted = CostPolicyWrapper(FrozenEstimator(model), costs={"fp": 1, "fn": 4},
+                                   strategy="tuned").fit(X, y)
+        monkeypatch.setattr(heldout, "PREDICT_CHUNK_ROWS", 65_536)  # one call
+        single = CostPolicyWrapper(FrozenEstimator(model), costs={"fp": 1, "fn": 4},
+                                   strategy="tuned").fit(X, y)
+        assert fitted.cutoff_ == single.cutoff_
+        assert fitted.heldout_cost_ == single.heldout_cost_
+        # heldout_cost_ is the mean cost of the rule predict applies, on the same rows
+        flagged = fitted.predict(X) == 1
+        cost = np.where(flagged, np.where(y == 1, 0.0, 1.0), np.where(y == 1, 4.0, 0.0))
+        assert fitted.heldout_cost_ == pytest.approx(cost.mean(), rel=1e-12)

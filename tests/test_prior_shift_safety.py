@@ -479,7 +479,7 @@ def test_two_class_score_test_is_statsmodels_welch_t_test():
         w_s, w_t = rng.uniform(0.3, 2.0, n_s), rng.uniform(0.3, 2.0, 500)
         for weighted in (False, True):
             a = shift_score_test(p_t, src, sample_weight=w_t if weighted else None,
-                                 source_proba=p_s,
+                                 source_proba=p_s, variance="separate",
                                  source_sample_weight=w_s if weighted else None)
             u_t = p_t[:, 1] / src[1] - p_t[:, 0] / src[0]
             u_s = p_s[:, 1] / src[1] - p_s[:, 0] / src[0]
@@ -497,6 +497,69 @@ def test_two_class_score_test_is_statsmodels_welch_t_test():
             # reported on the chi-square scale: the chi-square quantile at the same p-value
             assert a.statistic == pytest.approx(chi2.isf(pval, 1), rel=1e-8)
             assert a.statistic <= a.raw_statistic
+
+
+def test_two_class_pooled_score_test_is_students_t_test():
+    # Reference: scipy.stats.ttest_ind(equal_var=True) (Student's two-sample t-test) on the
+    # per-row scores u = p1 / pi1 - p0 / pi0 of both samples, unweighted; with weights,
+    # statsmodels CompareMeans(...).ttest_ind(usevar="pooled") with the weights rescaled to
+    # Kish's count. The default variance of shift_score_test without source_y pools the two
+    # samples' score variance: under "no shift" both samples come from one population.
+    ws_mod = pytest.importorskip("statsmodels.stats.weightstats")
+    from scipy.stats import chi2, ttest_ind
+
+    rng = np.random.default_rng(43)
+    for n_s in (700, 25):
+        p_s, _ = binary_gaussian(n_s, 0.4, rng, sep=1.0)
+        p_t, _ = binary_gaussian(500, 0.5, rng, sep=1.0)
+        src = np.array([0.55, 0.45])
+        u_t = p_t[:, 1] / src[1] - p_t[:, 0] / src[0]
+        u_s = p_s[:, 1] / src[1] - p_s[:, 0] / src[0]
+        a = shift_score_test(p_t, src, source_proba=p_s)
+        ref = ttest_ind(u_t, u_s, equal_var=True)
+        assert a.raw_statistic == pytest.approx(ref.statistic**2, rel=1e-10)
+        assert a.pvalue == pytest.approx(ref.pvalue, rel=1e-8)
+        assert a.denominator_df == pytest.approx(500 + n_s - 2, rel=1e-12)
+        assert a.statistic == pytest.approx(chi2.isf(ref.pvalue, 1), rel=1e-8)
+        w_s, w_t = rng.uniform(0.3, 2.0, n_s), rng.uniform(0.3, 2.0, 500)
+        b = shift_score_test(p_t, src, sample_weight=w_t, source_proba=p_s,
+                             source_sample_weight=w_s, variance="pooled")
+        kt = w_t * w_t.sum() / np.dot(w_t, w_t)
+        ks = w_s * w_s.sum() / np.dot(w_s, w_s)
+        cm = ws_mod.CompareMeans(ws_mod.DescrStatsW(u_t, weights=kt),
+                                 ws_mod.DescrStatsW(u_s, weights=ks))
+        t, pval, dof = cm.ttest_ind(usevar="pooled")
+        assert b.raw_statistic == pytest.approx(t**2, rel=1e-10)
+        assert b.pvalue == pytest.approx(pval, rel=1e-8)
+        assert b.denominator_df == pytest.approx(dof, rel=1e-10)
+    with pytest.raises(ValueError, match="source_y"):
+        shift_score_test(p_t, src, source_proba=p_s, source_y=(p_s[:, 1] > 0.5).astype(int),
+                         variance="pooled")
+    with pytest.raises(ValueError, match="variance"):
+        shift_score_test(p_t, src, source_proba=p_s, variance="welch")
+
+
+def test_pooled_variance_holds_its_size_with_few_skewed_labelled_rows():
+    # Few labelled rows (20) of a skewed score (log-normal, as the score of a rare class is):
+    # their own variance is underestimated in most draws, and the separate-variance test
+    # over-rejects even with its t reference; under "no shift" both samples share one
+    # population, and the variance pooled over both holds the 5 % level. Tolerance: 1,000
+    # draws, binomial sd of a 5 % rate 0.7 points; the pooled band is about 3 sd wide (it
+    # measures 3.7 %: the t reference is slightly conservative for a skewed mean), and the
+    # separate variance measures 11.3 %.
+    from probwrap.shift._shift_tests import _mean_cov, _score_stat_moments, _source_moments
+
+    rng = np.random.default_rng(44)
+    pooled = separate = 0
+    for _ in range(1000):
+        u_t = rng.lognormal(0.0, 1.0, size=(600, 1))
+        u_s = rng.lognormal(0.0, 1.0, size=(20, 1))
+        target = _mean_cov(u_t, np.ones(600))
+        source = _source_moments(u_s, np.ones(20), None, np.full(2, 0.5))
+        pooled += _score_stat_moments(target, source, 2, pooled=True).pvalue < 0.05
+        separate += _score_stat_moments(target, source, 2).pvalue < 0.05
+    assert 0.025 <= pooled / 1000 <= 0.065
+    assert separate / 1000 >= 0.09
 
 
 def test_multiclass_f_reference_holds_its_size_where_chi_square_does_not():
@@ -535,6 +598,46 @@ def test_score_test_rejects_at_about_its_nominal_rate_without_shift():
         rejections += res.pvalue < 0.05
     # binomial(300, 0.05): mean 15, sd 3.8
     assert 4 <= rejections <= 27
+
+
+def test_score_interval_endpoint_is_at_students_t_quantile_with_satterthwaite_df():
+    # Reference: at an endpoint pi of the score interval the two-sample statistic equals the
+    # squared Student t quantile (scipy.stats.t.ppf) at Satterthwaite's (1946) degrees of
+    # freedom of its three independent variance components (unlabelled rows, labelled rows of
+    # each class; Welch 1947), computed here from the formula of score_interval's docstring.
+    # Few labelled rows (30) make the degrees of freedom small, so the interval is wider than
+    # with the chi-square cut-off (small_sample=False), which it contains.
+    from scipy.stats import t as t_dist
+
+    rng = np.random.default_rng(46)
+    p_s, y_s = binary_gaussian(30, 0.4, rng, sep=1.2)
+    p_t, _ = binary_gaussian(400, 0.25, rng, sep=1.2)
+    src = np.bincount(y_s, minlength=2) / 30
+    (lo, hi), ok = score_interval(p_t, p_s, y_s, src)
+    (lo_c, hi_c), _ = score_interval(p_t, p_s, y_s, src, small_sample=False)
+    assert ok and lo < lo_c < hi_c < hi
+
+    def t_and_df(pi):
+        def u(p):
+            q = p / src
+            return (q[:, 1] - q[:, 0]) / ((1 - pi) * q[:, 0] + pi * q[:, 1])
+
+        u_t = u(p_t)
+        comps = [(u_t.var() / (u_t.size - 1), u_t.size)]
+        m_s = 0.0
+        for c, share in ((0, 1 - pi), (1, pi)):
+            u_c = u(p_s[y_s == c])
+            m_s += share * u_c.mean()
+            comps.append((share**2 * u_c.var() / (u_c.size - 1), u_c.size))
+        var = sum(v for v, _ in comps)
+        df = var**2 / sum(v**2 / (n - 1) for v, n in comps)
+        return (u_t.mean() - m_s) / np.sqrt(var), df
+
+    for end in (lo, hi):
+        t_val, df = t_and_df(end)
+        assert df < 60  # few labelled rows: far from the normal limit
+        # rtol: the endpoint is found by Brent's method to 1e-10 in the prior
+        assert abs(t_val) == pytest.approx(t_dist.ppf(0.975, df), rel=1e-6)
 
 
 def test_score_interval_at_source_prior_inverts_the_score_test():
@@ -613,7 +716,8 @@ def test_estimator_test_is_the_plain_public_score_test():
     src = est.source_prior_
     _, c_t, n_t = _mean_cov(_score_rows(cal_t, src), np.ones(700))
     _, c_s, n_s = _mean_cov(_score_rows(cal_s, src), np.ones(900))
-    both = c_t / (n_t - 1) + c_s / (n_s - 1)
+    # one score variance pooled over both samples (Student's t-test's denominator)
+    both = (n_t * c_t + n_s * c_s) / (n_t + n_s - 2) * (1 / n_t + 1 / n_s)
     assert res.null_harm_scale == pytest.approx(
         null_harm_scale(cal_t, np.ones(700), src, both), rel=1e-10)
 
@@ -679,7 +783,8 @@ def test_forest_with_exact_zero_one_on_bundled_wine_stays_inside():
     assert ll <= ll_base
 
 
-def test_score_test_reference_distribution_does_not_depend_on_the_weight_scale():
+@pytest.mark.parametrize("variance", ["pooled", "separate"])
+def test_score_test_reference_distribution_does_not_depend_on_the_weight_scale(variance):
     # The labelled rows' effective size (Kish) sets the F reference's degrees of freedom:
     # weights scaled by 1e-3 or to sum 1 give the same statistic, p-value and degrees of
     # freedom (rounding only: rtol 1e-9).
@@ -689,9 +794,11 @@ def test_score_test_reference_distribution_does_not_depend_on_the_weight_scale()
     w_s, w_t = rng.uniform(0.5, 2.0, 40), rng.uniform(0.5, 2.0, 300)
     src = [0.5, 0.25, 0.25]
     runs = [shift_score_test(p_t, src, sample_weight=w_t * c, source_proba=p_s,
-                             source_sample_weight=w_s * d)
+                             source_sample_weight=w_s * d, variance=variance)
             for c, d in ((1.0, 1.0), (1e-3, 1e-3), (1 / w_t.sum(), 1 / w_s.sum()))]
-    assert np.isfinite(runs[0].denominator_df) and runs[0].denominator_df < 100
+    # pooled: Kish's counts of both samples minus 2 (about 320); separate: Welch's, far fewer
+    assert np.isfinite(runs[0].denominator_df)
+    assert (runs[0].denominator_df < 100) == (variance == "separate")
     for r in runs[1:]:
         assert r.pvalue == pytest.approx(runs[0].pvalue, rel=1e-9)
         assert r.statistic == pytest.approx(runs[0].statistic, rel=1e-9)

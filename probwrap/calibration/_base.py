@@ -128,6 +128,17 @@ class CalibrationMap(BaseEstimator):
     #: fitted one-vs-rest for one of ``k`` classes (set by :func:`one_vs_rest_copy`)
     _rest_classes: int = 1
 
+    @classmethod
+    def _get_param_names(cls) -> list[str]:
+        # scikit-learn reads the names from ``inspect.signature`` on every ``get_params`` and
+        # ``clone`` (twice per clone); ``auto`` clones maps hundreds of times per fit, so the
+        # names are read once per class (the same list, as a copy)
+        names = cls.__dict__.get("_param_names_cache")
+        if names is None:
+            names = super()._get_param_names()
+            cls._param_names_cache = names
+        return list(names)
+
     def fit(self, scores: Any, y: Any, sample_weight: Any = None) -> CalibrationMap:
         """Fit the map.
 

@@ -115,10 +115,10 @@ class BetaMap(CalibrationMap):
                 c = float(np.log(ybar) - np.log1p(-ybar))
             if np.any(coef < 0):
                 continue
-            loss = _logistic_loss(X @ coef + c, y, wn)
             if free == (0, 1):
                 best = (coef[0], coef[1], c)
                 break
+            loss = _logistic_loss(X @ coef + c, y, wn)
             if loss < best_loss:
                 best, best_loss = (coef[0], coef[1], c), loss
         assert best is not None  # the intercept-only face is always feasible

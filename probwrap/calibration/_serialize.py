@@ -240,6 +240,13 @@ def map_to_dict(
             "scores the saved map will be applied to are probabilities or log-odds."
         )
     _check_scale(score_scale, "`score_scale`")
+    if method == "venn_abers" and getattr(cal_map, "_rest_classes", 1) != 1:
+        # its merge shares the interval's width among the k - 1 other classes of the
+        # one-vs-rest fit it belongs to; saved alone it would predict as a binary map
+        raise ValueError(
+            "`cal_map` is one class's map of a one-vs-rest Venn-Abers fit, whose merged "
+            "probability depends on the other classes; only binary maps can be saved."
+        )
     _check_plain_tree(dict(metadata), "`metadata`")
     from .._version import __version__
 

@@ -168,7 +168,7 @@ def settle_cutoff(
     at_min = np.flatnonzero(admissible & (cost <= least + 1e-9 * max(abs(least), 1e-300)))
     best = int(at_min[np.argmin(np.abs(cutoffs[at_min] - search.cutoff))])
     c_best = base + a0 * f0[best] + a1 * f1[best]
-    n_eff = float(count_weights(w[w > 0])[0].sum())
+    n_eff = float(count_weights(w if w.all() else w[w > 0])[0].sum())  # (no copy if all > 0)
     z = NormalDist().inv_cdf(1.0 - level)
 
     def excess_and_se(g0, g1, c):

@@ -317,7 +317,8 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
     mean = su / total
     cov = suu / total - np.outer(mean, mean)
     source_score = getattr(est, "_source_score", None)
-    test = _score_stat_moments((mean, cov, n_eff), _current_source_score(source_score), k)
+    test = _score_stat_moments((mean, cov, n_eff), _current_source_score(source_score), k,
+                                pooled=True)
     stat, pvalue = test.statistic, test.pvalue
     # the same harm scale as in memory (for the max_harm cutoff): from the same sums
     harm_scale = _null_harm_scale_moments(soft_mean / total, suu / total, entropy / total, src,

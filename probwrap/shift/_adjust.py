@@ -8,7 +8,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_proba, plain
+from .._validation import check_proba, plain, row_sum
 
 __all__ = ["adjust_to_prior", "check_prior", "project_to_simplex", "shift_cutoff"]
 
@@ -115,7 +115,7 @@ def adjust_to_prior(proba: Any, source_prior: Any, target_prior: Any) -> np.ndar
             log_ratio = np.log(tgt) - np.log(src)
         ratio = np.exp(log_ratio - log_ratio.max())
     num = p * ratio
-    den = num.sum(axis=1, keepdims=True)
+    den = row_sum(num, True)
     empty = den[:, 0] <= 0
     if empty.any():
         warnings.warn(

@@ -7,7 +7,15 @@ from typing import Any
 import numpy as np
 from scipy.optimize import minimize
 
-from .._validation import check_labels, check_same_length, check_sample_weight, check_scores, plain
+from .._validation import (
+    check_labels,
+    check_same_length,
+    check_sample_weight,
+    check_scores,
+    plain,
+    row_max,
+    row_sum,
+)
 from ..calibration._logodds import proba_to_log_proba
 
 __all__ = ["BiasCorrectedScaling"]
@@ -79,8 +87,8 @@ def identity_test(
 
 def _log_softmax(u: np.ndarray, axis: int = 1) -> np.ndarray:
     """Row-wise log-softmax of a 2-d array (numerically stable)."""
-    shifted = u - u.max(axis=axis, keepdims=True)
-    return shifted - np.log(np.exp(shifted).sum(axis=axis, keepdims=True))
+    shifted = u - (row_max(u, True) if axis == 1 else u.max(axis=axis, keepdims=True))
+    return shifted - np.log(row_sum(np.exp(shifted), True) if axis == 1 else np.exp(shifted).sum(axis=axis, keepdims=True))
 
 
 def _floor(n_rows: float, k: int) -> float:
@@ -344,7 +352,7 @@ class BiasCorrectedScaling:
         if floor > 0.0:
             # every probability at least the floor, then the rows renormalised
             out = np.maximum(out, np.log(floor))
-            out = out - np.log(np.exp(out).sum(axis=1, keepdims=True))
+            out = out - np.log(row_sum(np.exp(out), True))
         return out
 
     def predict(self, proba: Any) -> np.ndarray:
@@ -361,5 +369,5 @@ class BiasCorrectedScaling:
         floor = float(getattr(self, "floor_", 0.0))
         if floor > 0.0:
             out = np.maximum(out, np.log(floor))
-            out = out - np.log(np.exp(out).sum(axis=1, keepdims=True))
+            out = out - np.log(row_sum(np.exp(out), True))
         return np.exp(out)

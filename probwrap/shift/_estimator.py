@@ -394,7 +394,8 @@ class PriorEstimator(_Resampling):
             self._warn_boundary(ml, p, wk, n_eff)
         m_t, c_t, _ = _mean_cov(_score_rows(p, src), w)
         source_score = getattr(self, "_source_score", None)
-        test = _score_stat_moments((m_t, c_t, n_eff), _current_source_score(source_score), k)
+        test = _score_stat_moments((m_t, c_t, n_eff), _current_source_score(source_score), k,
+                                    pooled=True)
         stat, pvalue = test.statistic, test.pvalue
         harm_scale = null_harm_scale(p, w, src, test.mean_cov)
         bounds, dropped = None, 0

@@ -142,6 +142,7 @@ def score_interval(
     confidence_level: float = 0.95,
     n_grid: int = 241,
     centre: float | None = None,
+    small_sample: bool = True,
 ) -> tuple[np.ndarray, bool]:
     r"""Two-sample score interval for the positive-class prior of unlabelled rows (two classes).
 
@@ -159,10 +160,13 @@ def score_interval(
         \qquad f = \frac{\pi_y}{\pi^s_y}\, u(x; \pi)\ \text{on the labelled rows},
 
     (the labelled mean and variance taken within each class and combined with the shares
-    :math:`\pi`, since the labelled class shares are known exactly) is approximately
-    chi-square with one degree of freedom at the true prior, and the interval
-    is every :math:`\pi` with :math:`T(\pi) \le \chi^2_{1, \text{level}}` (test inversion, as
-    for the Wilson (1927) score interval of a proportion). Both samples' sampling error enter
+    :math:`\pi`, since the labelled class shares are known exactly) is approximately the
+    square of Student's t at the true prior, with Satterthwaite's degrees of freedom
+    :math:`\nu = V^2 / \sum_i V_i^2 / (n_i - 1)` of its three variance components :math:`V_i`
+    (Welch 1947; :math:`\nu` falls with the labelled rows of each class, and grows to
+    chi-square with one degree of freedom with many rows of all kinds), and the interval
+    is every :math:`\pi` with :math:`T(\pi) \le t^2_{\nu(\pi),\, (1 + \text{level})/2}` (test
+    inversion, as for the Wilson (1927) score interval of a proportion). Both samples' sampling error enter
     the denominator; because the equality of means holds for every calibration map, the
     estimated calibration contributes only at second order. Test inversion stays honest at
     the edges, where the bootstrap of an estimate stuck at 0 degenerates. At
@@ -190,6 +194,9 @@ def score_interval(
     centre : float, default=None
         A prior inside the interval (for example the maximum-likelihood estimate): the
         endpoints are then found by Brent's method between it and 0 and 1, without a grid.
+    small_sample : bool, default=True
+        Refer the statistic to Student's t with Satterthwaite's degrees of freedom (False:
+        chi-square with one degree of freedom, the large-sample limit).
 
     Returns
     -------
@@ -216,6 +223,7 @@ def score_interval(
     """
     from scipy.optimize import brentq
     from scipy.stats import chi2
+    from scipy.stats import f as f_dist
 
     p_t = np.asarray(proba, dtype=float)
     p_s = np.asarray(source_proba, dtype=float)
@@ -240,7 +248,13 @@ def score_interval(
             n_c = float(wc.sum() ** 2 / np.dot(wc, wc))
         strata.append((q_s[rows, 0], q_s[rows, 1] - q_s[rows, 0], wc / wc.sum(), n_c))
 
+    level = float(confidence_level)
+
     def stat(t: np.ndarray) -> np.ndarray:
+        """The statistic at each candidate prior, on the chi-square scale: ``T`` referred to
+        ``F(1, nu)`` (the square of Student's t) with Satterthwaite's degrees of freedom ``nu``
+        of the variance components, then mapped to the chi-square quantile at the same tail
+        probability, so that one chi-square cut-off serves every candidate."""
         t = np.atleast_1d(np.asarray(t, dtype=float))
         out = np.empty(t.shape[0])
         for lo in range(0, t.shape[0], 32):  # memory: rows x 32 at a time
@@ -249,18 +263,29 @@ def score_interval(
             m_t = wt @ u_t
             v_t = np.maximum(wt @ (u_t * u_t) - m_t**2, 0.0)
             m_s = np.zeros(tc.shape[0])
-            var = v_t / max(n_t - 1.0, 1.0)
+            comp = v_t / max(n_t - 1.0, 1.0)
+            var = comp
+            spread = comp**2 / max(n_t - 1.0, 1.0)
             for c, (a_c, d_c, w_c, n_c) in enumerate(strata):
                 share = tc if c == 1 else 1.0 - tc
                 u_c = d_c[:, None] / np.maximum(a_c[:, None] + tc * d_c[:, None], tiny)
                 m_c = w_c @ u_c
                 v_c = np.maximum(w_c @ (u_c * u_c) - m_c**2, 0.0)
                 m_s = m_s + share * m_c
-                var = var + share**2 * v_c / max(n_c - 1.0, 1.0)
-            out[lo:lo + 32] = (m_t - m_s) ** 2 / np.maximum(var, 1e-300)
+                comp = share**2 * v_c / max(n_c - 1.0, 1.0)
+                var = var + comp
+                spread = spread + comp**2 / max(n_c - 1.0, 1.0)
+            raw = (m_t - m_s) ** 2 / np.maximum(var, 1e-300)
+            if small_sample:
+                nu = np.where(spread > 0, var**2 / np.maximum(spread, 1e-300), np.inf)
+                tail = np.where(np.isfinite(nu) & (nu < 1e7),
+                                f_dist.sf(raw, 1, np.minimum(np.maximum(nu, 1.0), 1e7)),
+                                chi2.sf(raw, 1))
+                raw = np.where(tail > 1e-300, chi2.isf(np.maximum(tail, 1e-300), 1), raw)
+            out[lo:lo + 32] = raw
         return out
 
-    crit = float(chi2.ppf(float(confidence_level), 1))
+    crit = float(chi2.ppf(level, 1))
 
     def excess(t: float) -> float:
         v = float(stat(np.array([t]))[0])
