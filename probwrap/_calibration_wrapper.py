@@ -7,6 +7,7 @@ import warnings
 from typing import Any
 
 import numpy as np
+from scipy.special import logsumexp
 from sklearn.base import clone
 from sklearn.utils.metaestimators import available_if
 
@@ -38,29 +39,6 @@ _ORDER_BASED = (IsotonicMap, BinningMap, VennAbersMap)
 
 #: Exact zero probabilities become this (the smallest positive float) before taking logs.
 _TINY = np.nextafter(0.0, 1.0)
-
-
-def _log_odds_against_rest(scores: np.ndarray) -> np.ndarray:
-    """``z_k - log(sum_{j != k} exp(z_j))`` for every column ``k`` of ``scores`` (n, k >= 3).
-
-    Two passes of exponentials over the scores instead of a log-sum-exp per class: every class
-    but the row's largest takes the sum of all exponentials (shifted by the row maximum) less
-    its own, which keeps the largest's term of 1, so the difference loses nothing; the largest
-    class sums the others shifted by the second largest.
-    """
-    z = np.array(scores.T, dtype=float, order="C")  # one row per class: contiguous reductions
-    rows = np.arange(z.shape[1])
-    top = z.argmax(axis=0)
-    m1 = z[top, rows]
-    e = np.exp(z - m1)
-    rest = e.sum(axis=0) - e  # sum over the other classes, each at least 1 except the top's
-    with np.errstate(divide="ignore"):  # the top's entry may be 0 here; it is replaced below
-        lse = m1 + np.log(rest)
-    z2 = z.copy()
-    z2[top, rows] = -np.inf
-    m2 = z2.max(axis=0)
-    lse[top, rows] = m2 + np.log(np.exp(z2 - m2).sum(axis=0))
-    return (z - lse).T
 
 
 def _kept_probability_map() -> IdentityMap:
@@ -393,7 +371,10 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         """Per-class binary scores (log-odds of each class against the rest)."""
         if self.response_ == "decision_function":
             return scores
-        return _log_odds_against_rest(scores)
+        out = np.empty_like(scores)
+        for k in range(scores.shape[1]):
+            out[:, k] = scores[:, k] - logsumexp(np.delete(scores, k, axis=1), axis=1)
+        return out
 
     def _map_input(self, cal: CalibrationMap, scores: np.ndarray) -> np.ndarray:
         """What a map sees: order-based maps the full-resolution scores; parametric maps, for

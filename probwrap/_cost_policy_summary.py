@@ -41,15 +41,16 @@ def _heldout_summary(policy: Any, p: np.ndarray, ho: Any, matrix, share) -> dict
                 p[rows], ho.y_index[rows], matrix, sample_weight=w[rows], capacity=share,
                 score_bounds=(0.0, 1.0),
             ).cutoff)
-    # (written for memory: at most two temporaries as long as the rows besides the log-odds)
+    # (written for memory: at most one temporary as long as the rows besides the log-odds)
     present = None if np.all(w > 0) else np.flatnonzero(w > 0)
     pp = p if present is None else p[present]
+    pp_rows = pp.shape[0]
     with np.errstate(divide="ignore"):
         s = np.log(pp)
-        other = np.negative(pp)
-        np.log1p(other, out=other)
-        s -= other
-    del other, pp
+        # minus log1p(-p), a block at a time (no second array as long as the rows)
+        for i in range(0, pp_rows, 1 << 14):
+            s[i : i + (1 << 14)] -= np.log1p(np.negative(pp[i : i + (1 << 14)]))
+    del pp
     # probabilities of exactly 0 or 1 go to the outermost finite bins' neighbours
     finite = np.isfinite(s)
     lo_f = float(np.min(s, where=finite, initial=np.inf))
@@ -66,9 +67,17 @@ def _heldout_summary(policy: Any, p: np.ndarray, ho: Any, matrix, share) -> dict
         resolution *= 2.0
     y = ho.y_index if present is None else ho.y_index[present]
     wp = w if present is None else w[present]
-    chunk = 1 << 16  # the tally's temporaries stay a small share of the rows
-    weighted = tally_scores(s, y, sample_weight=wp, resolution=resolution, chunk_size=chunk)
+    # chunks of an eighth of the rows, 16,384 to 65,536: the tally's temporaries (about six
+    # arrays of a chunk) stay a small share of the rows, and so do the per-chunk tallies kept
+    # until they are merged (one per chunk, up to the bins' size each). Unit weights tally to
+    # the same exact counts whatever the chunks.
+    chunk = min(max(pp_rows // 8, 1 << 14), 1 << 16)
     rows = tally_scores(s, y, resolution=resolution, chunk_size=chunk)
+    # unit weights: the weighted tally is the row tally (the same counts; no copy of the weights)
+    unit = bool(np.all(wp == 1.0))
+    weighted = rows if unit else tally_scores(
+        s, y, sample_weight=wp, resolution=resolution, chunk_size=chunk
+    )
     return {"weighted": weighted, "rows": rows.counts, "folds": np.asarray(fold_cutoffs, float)}
 
 

@@ -77,7 +77,7 @@ def check_fitted(estimator: Any, attribute: str) -> None:
 
 
 # Rows per call when a frozen model predicts a large NumPy array at fit time (see below).
-PREDICT_CHUNK_ROWS = 65_536
+PREDICT_CHUNK_ROWS = 16_384
 
 
 def _predict_in_chunks(method: Any, X: Any) -> np.ndarray:

@@ -208,7 +208,7 @@ def test_frozen_model_predicted_in_row_blocks_gives_the_one_call_result(monkeypa
         np.testing.assert_array_equal(blocks, whole)
         fitted = CostPolicyWrapper(FrozenEstimator(model), costs={"fp": 1, "fn": 4},
                                    strategy="tuned").fit(X, y)
-        monkeypatch.setattr(heldout, "PREDICT_CHUNK_ROWS", 65_536)  # one call
+        monkeypatch.setattr(heldout, "PREDICT_CHUNK_ROWS", 16_384)  # one call
         single = CostPolicyWrapper(FrozenEstimator(model), costs={"fp": 1, "fn": 4},
                                    strategy="tuned").fit(X, y)
         assert fitted.cutoff_ == single.cutoff_
