@@ -65,6 +65,15 @@ _TWO_FOLD_CELLS = 20_000
 #: than this many paired standard errors above the best one's.
 _RACE_SE = 4.0
 
+#: ``method="auto"``'s order-based candidates (binning, isotonic regression, Venn-Abers) are not
+#: eligible when the smallest class has fewer than this many held-out rows (of weight > 0): their
+#: levels then rest on one or two rows of that class per fold, and a lucky fold makes a
+#: cross-validated score that is not evidence (set by benchmarks/calibration.py, see
+#: docs/calibration.md).
+_ORDER_MAPS_MIN_CLASS_ROWS = 8
+
+_ORDER_BASED_NAMES = ("binning", "isotonic", "venn_abers")
+
 #: Probabilities are floored at this value when scoring candidate maps by log loss, so that a map
 #: that predicts an exact 0 for an event that happens is heavily penalised but stays finite.
 _LOG_LOSS_FLOOR = 1e-15
@@ -295,6 +304,16 @@ class _AutoChoice:
             warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
             notes[fallback] = "chosen without cross-validation: " + reason
             return fallback, {}, notes
+        if present.min() < _ORDER_MAPS_MIN_CLASS_ROWS:
+            few = [nm for nm in names if nm in _ORDER_BASED_NAMES]
+            if len(few) < len(names):  # never leaves auto without a candidate
+                for nm in few:
+                    notes[nm] = (
+                        f"not eligible: the smallest class has {int(present.min())} held-out "
+                        f"row(s), fewer than the {_ORDER_MAPS_MIN_CLASS_ROWS} an order-based map "
+                        "needs for a cross-validated score to be evidence"
+                    )
+                names = [nm for nm in names if nm not in _ORDER_BASED_NAMES]
         rows = self._selection_rows(ho)
         if rows is not None:
             scores, y, w = scores[rows], y[rows], w[rows]

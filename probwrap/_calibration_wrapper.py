@@ -29,6 +29,7 @@ from .calibration._binning import BinningMap
 from .calibration._identity import IdentityMap
 from .calibration._isotonic import IsotonicMap
 from .calibration._logodds import DEFAULT_CLIP, clip_from_smallest
+from .calibration._platt import PlattMap
 from .calibration._venn_abers import VennAbersMap
 
 __all__ = ["CalibrationWrapper", "CALIBRATION_METHODS"]
@@ -104,7 +105,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         classes, k one-vs-rest) stay below 1,000: it costs one to two orders of magnitude more
         to cross-validate than the others, and beyond small sets its merged probability agrees
         with the smoothed isotonic fit to within about 1/n. On ties in the number of
-        parameters, Venn–Abers is preferred to isotonic regression.
+        parameters, Venn–Abers is preferred to isotonic regression. With fewer than 8 held-out
+        rows in some class the order-based maps (binning, isotonic, Venn–Abers) are not
+        eligible (``method_notes_`` says so).
     clip : float or None, default=None
         Only for the parametric maps (Platt, beta, temperature) fitted on ``predict_proba``
         output: log-odds are clipped to ``±logit(1 - clip)`` (log-probabilities floored at
@@ -114,7 +117,10 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         ``1/n``, that is ``1/(2n)``), kept within ``[1e-12, 0.25]``; the value used is
         ``clip_``. Order-based maps (isotonic, binning, Venn–Abers) always see the
         full-resolution log-odds ``log p1 - log p0``, which keep the order of probabilities deep
-        in the tails; exact zeros become the smallest positive float.
+        in the tails; exact zeros become the smallest positive float. Platt's map (named by
+        ``method``, or an ``auto`` candidate) is fitted as ``PlattMap(limit_scores=True)``,
+        which further clips its input at half its own output floor (see
+        :class:`~probwrap.calibration.PlattMap`).
     tally_resolution : float, default=1e-3
         Dask input only: bin width on the log-odds scale of the score tallies that the
         predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
@@ -383,6 +389,14 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
 
     # -- maps ----------------------------------------------------------------------------------
     def _fit_map(self, template: CalibrationMap, scores, y_index, w, ovr=None):
+        if (
+            type(template) is PlattMap
+            and self.response_ != "decision_function"
+            and not isinstance(self.method, CalibrationMap)
+        ):
+            # log-odds from probabilities: Platt's map clips them at half its output floor, so
+            # that rows at (or within 1e-12 of) 0 or 1 cannot flatten its slope (see PlattMap)
+            template = clone(template).set_params(limit_scores=True)
         if scores.ndim == 1:
             return clone(template).fit(self._map_input(template, scores), y_index, sample_weight=w)
         if template.supports_multiclass:

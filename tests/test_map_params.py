@@ -39,5 +39,5 @@ def test_a_subclass_with_other_parameters_gets_its_own_names():
             self.factor = factor
 
     assert sorted(ScaledPlatt().get_params()) == ["factor", "smooth_targets"]
-    assert sorted(PlattMap().get_params()) == ["smooth_targets"]
+    assert sorted(PlattMap().get_params()) == ["limit_scores", "smooth_targets"]
     assert clone(ScaledPlatt(factor=3.0)).factor == 3.0

@@ -85,7 +85,7 @@ def test_layout_and_metadata():
     assert d["score_scale"] == "proba"
     assert d["classes"] == [1, 2] and d["classes_kind"] == "int"
     assert d["metadata"] == {"source": "held-out"}
-    assert d["settings"] == {"smooth_targets": True}
+    assert d["settings"] == {"smooth_targets": True, "limit_scores": False}
     assert isinstance(d["fitted"]["slope_"], float)
 
 
@@ -284,3 +284,16 @@ def test_one_vs_rest_venn_abers_map_is_not_saved_alone():
     binary = one_vs_rest_copy(VennAbersMap(), 2).fit(s, y)
     again = map_from_dict(map_to_dict(binary, score_scale="log-odds"))
     np.testing.assert_array_equal(again.predict(s), binary.predict(s))
+
+
+def test_platt_score_limit_survives_a_round_trip():
+    # consistency test: PlattMap(limit_scores=True) is restored from its setting and floor_ alone
+    rng = np.random.default_rng(0)
+    s = np.r_[rng.normal(-2.0, 1.0, 15), 27.0, 26.0, 25.0, rng.normal(3.0, 1.0, 4)]
+    y = np.r_[np.zeros(15), np.ones(7)].astype(int)
+    m = PlattMap(limit_scores=True).fit(s, y)
+    assert m.score_limit_ == pytest.approx(np.log(2 * 24 - 1))  # floor 1/(22 + 2)
+    r = map_from_dict(map_to_dict(m, score_scale="log-odds"))
+    t = np.linspace(-30.0, 30.0, 13)
+    np.testing.assert_array_equal(r.predict(t), m.predict(t))
+    assert r.predict([27.0]) == m.predict([m.score_limit_])  # clipped at the limit

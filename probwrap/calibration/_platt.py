@@ -136,6 +136,14 @@ class PlattMap(CalibrationMap):
     smooth_targets : bool, default=True
         Use Platt's smoothed targets instead of the raw 0/1 labels (and floor the output);
         ``False`` gives the plain maximum-likelihood fit.
+    limit_scores : bool, default=False
+        Clip the scores to ``±score_limit_`` in ``fit`` and ``predict``, where
+        ``score_limit_ = logit(1 - floor_ / 2)``: half the output floor, as a log-odds. Meant
+        for log-odds converted from a model's probabilities (``CalibrationWrapper`` sets it for
+        them): the map never outputs a probability beyond ``floor_``, and inputs far beyond
+        what it can output (naive Bayes probabilities within 1e-12 of 0 or 1, log-odds near
+        ±27) would otherwise dominate the fit and, against the smoothed targets, flatten the
+        slope for every other row. Has no effect without ``smooth_targets`` (no floor).
 
     Attributes
     ----------
@@ -145,6 +153,8 @@ class PlattMap(CalibrationMap):
         Constant term.
     floor_ : float
         Smallest output (0 without smoothing).
+    score_limit_ : float or None
+        The clip of the scores (``limit_scores=True`` with smoothed targets), else None.
     boundary_ : str or None
         Set when raw 0/1 targets meet scores that separate the classes (no finite fit).
     classes_ : ndarray of shape (2,)
@@ -178,8 +188,9 @@ class PlattMap(CalibrationMap):
 
     complexity = 2.0
 
-    def __init__(self, *, smooth_targets: bool = True) -> None:
+    def __init__(self, *, smooth_targets: bool = True, limit_scores: bool = False) -> None:
         self.smooth_targets = smooth_targets
+        self.limit_scores = limit_scores
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         if not isinstance(self.smooth_targets, (bool, np.bool_)):
@@ -192,9 +203,13 @@ class PlattMap(CalibrationMap):
                 UserWarning,
                 stacklevel=3,
             )
+        if not isinstance(self.limit_scores, (bool, np.bool_)):
+            raise ValueError(f"`limit_scores` must be True or False; got {plain(self.limit_scores)!r}.")
+        self.score_limit_ = None
         if self.smooth_targets:
             t = smoothed_binary_targets(y, w, self._rest_classes)
             self._set_floor(w, 2)
+            scores = self._limited(scores)
         else:
             t = y
             if _separated(scores, y, w):
@@ -219,6 +234,19 @@ class PlattMap(CalibrationMap):
     def _uses_counts(self) -> bool:
         return bool(self.smooth_targets)
 
+    def _limited(self, scores: np.ndarray) -> np.ndarray:
+        """The scores clipped to ``±score_limit_`` (set here from ``floor_`` when fitting)."""
+        if not hasattr(self, "score_limit_") or (self.limit_scores and self.score_limit_ is None):
+            # fitting, or a map restored from a saved description (floor_ and the setting only)
+            floor = float(getattr(self, "floor_", 0.0))
+            self.score_limit_ = (
+                float(np.log(2.0 / floor - 1.0)) if self.limit_scores and floor > 0.0 else None
+            )
+        if self.score_limit_ is None:
+            return scores
+        return np.clip(scores, -self.score_limit_, self.score_limit_)
+
     def _predict(self, scores: np.ndarray) -> np.ndarray:
+        scores = self._limited(scores)
         with np.errstate(over="ignore"):  # slope * score beyond the largest double saturates
             return expit(self.slope_ * scores + self.intercept_)

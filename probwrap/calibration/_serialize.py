@@ -93,7 +93,7 @@ _SPECS: dict[str, tuple[type[CalibrationMap], tuple[str, ...], dict[str, str]]] 
     ),
     "platt": (
         PlattMap,
-        ("smooth_targets",),
+        ("smooth_targets", "limit_scores"),
         {"slope_": "float", "intercept_": "float", "floor_": "floor"},
     ),
     "beta": (

@@ -51,7 +51,14 @@ def _newton_logistic(
     x: np.ndarray, y: np.ndarray, w: np.ndarray, fit_slope: bool, tol: float = 1e-12,
     max_iter: int = 100,
 ) -> tuple[np.ndarray, int]:
-    """Weighted logistic regression of y on [1, x] (or on 1 with offset x) by damped Newton."""
+    """Weighted logistic regression of y on [1, x] (or on 1 with offset x) by damped Newton.
+
+    A step that does not raise the likelihood even when halved to 1e-10 of its length (or is
+    not finite: a flat curvature where every forecast is at 0 or 1) is not taken; the fit
+    stops where it is. The offset-only fit is one-dimensional and solved by bracketing.
+    """
+    if not fit_slope:
+        return _intercept_with_offset(x, y, w)
     beta = np.array([0.0, 1.0])
     design = np.column_stack((np.ones_like(x), x))
     eta = design @ beta
@@ -66,13 +73,17 @@ def _newton_logistic(
             step = np.linalg.solve(hess, grad)
         else:
             step = np.array([resid.sum() / curv.sum(), 0.0])
+        if not np.all(np.isfinite(step)):
+            return beta, it
         scale = 1.0
         while True:
             cand = beta + scale * step
             eta_c = design @ cand
             ll_c = _loglik(eta_c, y, w)
-            if ll_c >= ll - 1e-12 * (1.0 + abs(ll)) or scale < 1e-10:
+            if ll_c >= ll - 1e-12 * (1.0 + abs(ll)):
                 break
+            if scale < 1e-10:  # no step raises the likelihood: at the optimum to rounding
+                return beta, it
             scale *= 0.5
         beta, eta, ll = cand, eta_c, ll_c
         if np.max(np.abs(scale * step)) <= tol * (1.0 + np.max(np.abs(beta))):
@@ -84,6 +95,29 @@ def _newton_logistic(
         stacklevel=3,
     )
     return beta, max_iter
+
+
+def _intercept_with_offset(x: np.ndarray, y: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, int]:
+    """``c`` solving the score equation ``sum w (y - expit(c + x)) = 0`` by Brent's method.
+
+    The score falls strictly from ``sum w y > 0`` to ``sum w y - sum w < 0`` (both classes have
+    positive weight), so the root is unique and finite; Newton's method from ``c = 0`` can run
+    off when the forecasts are all near 0 or 1 (their curvature underflows).
+    """
+    from scipy.optimize import brentq
+
+    target = float(np.dot(w, y))
+
+    def score(c: float) -> float:
+        return target - float(np.dot(w, expit(c + x)))
+
+    lo, hi = -1.0, 1.0
+    while score(lo) <= 0.0:
+        lo *= 2.0
+    while score(hi) >= 0.0:
+        hi *= 2.0
+    c, info = brentq(score, lo, hi, xtol=1e-13, rtol=4 * np.finfo(float).eps, full_output=True)
+    return np.array([c, 0.0]), int(info.iterations)
 
 
 def calibration_slope_intercept(
@@ -102,8 +136,9 @@ def calibration_slope_intercept(
     - **intercept**: ``logit P(y=1) = c + x`` (``x`` as a fixed offset, no slope); the intercept is
       ``c``, the calibration-in-the-large.
 
-    Both are maximum-likelihood fits by Newton's method with step halving, stopped when a step
-    changes no coefficient by more than ``1e-12`` (relative). Exact 0 and 1 probabilities have no
+    The slope is a maximum-likelihood fit by Newton's method with step halving, stopped when a
+    step changes no coefficient by more than ``1e-12`` (relative); the intercept solves its
+    one-dimensional score equation by Brent's method (finite whenever both classes are present). Exact 0 and 1 probabilities have no
     finite log-odds: they are moved to ``clip`` and ``1 - clip`` by
     :func:`probwrap.calibration.proba_to_log_odds` (log-odds about -27.6 and 27.6 for the default)
     and a ``UserWarning`` says how many rows were moved; such rows can dominate the fits.
