@@ -241,18 +241,17 @@ class PriorEstimator(_Resampling):
 
     def calibrate(self, proba: Any) -> np.ndarray:
         """Apply the fitted calibration to posteriors of shape (n, k) (identity when none)."""
-        self._check_fitted()
-        p = check_proba(proba, name="proba", ndim=2)
-        if p.shape[1] != self.n_classes_:
-            raise ValueError(
-                f"`proba` has {p.shape[1]} columns but the estimator was fitted on "
-                f"{self.n_classes_} classes."
-            )
+        p = self._checked_proba(proba)
         return p if self.calibrator_ is None else self.calibrator_.predict(p)
 
     def calibrate_output(self, proba: Any) -> np.ndarray:
         """Posteriors to return to a user: :meth:`calibrate`, or the model's own (floored) where
         the calibration's likelihood-ratio test kept them (``calibrator_.identity_kept_``)."""
+        p = self._checked_proba(proba)
+        return p if self.calibrator_ is None else self.calibrator_.predict_output(p)
+
+    def _checked_proba(self, proba: Any) -> np.ndarray:
+        """``proba`` checked as posteriors over the fitted classes (after the fitted check)."""
         self._check_fitted()
         p = check_proba(proba, name="proba", ndim=2)
         if p.shape[1] != self.n_classes_:
@@ -260,7 +259,7 @@ class PriorEstimator(_Resampling):
                 f"`proba` has {p.shape[1]} columns but the estimator was fitted on "
                 f"{self.n_classes_} classes."
             )
-        return p if self.calibrator_ is None else self.calibrator_.predict_output(p)
+        return p
 
     def _check_fitted(self) -> None:
         if not hasattr(self, "source_prior_"):
