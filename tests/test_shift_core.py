@@ -328,7 +328,9 @@ def test_bcts_multiclass_matches_scipy_minimiser_and_bias_property():
         return -logp[np.arange(len(y)), y].mean()
 
     ref = minimize(negll, np.r_[1.0, 0.0, 0.0], method="BFGS", options={"gtol": 1e-9}).x
-    cal = BiasCorrectedScaling(shrinkage=0).fit(np.exp(z), y)  # the plain MLE
+    # the plain MLE on the log-probabilities themselves (fit(proba) first floors them at the
+    # data-chosen clip, see heldout_clip)
+    cal = BiasCorrectedScaling(shrinkage=0).fit_log_proba(z, y)
     assert cal.scale_[0] == pytest.approx(ref[0], abs=1e-4)
     np.testing.assert_allclose(cal.bias_[1:], ref[1:], atol=1e-4)
     np.testing.assert_allclose(cal.predict(np.exp(z)).mean(0), np.bincount(y) / len(y), atol=1e-7)
@@ -354,7 +356,7 @@ def test_bcts_prior_matches_scipy_minimiser_keeps_bias_property():
 
     ref = minimize(objective, np.r_[1.0, 0.0, 0.0], method="Nelder-Mead",
                    options={"xatol": 1e-10, "fatol": 1e-12, "maxiter": 20000}).x
-    cal = BiasCorrectedScaling().fit(np.exp(z), y)
+    cal = BiasCorrectedScaling().fit_log_proba(z, y)  # z itself, without the data-chosen floor
     assert cal.scale_[0] == pytest.approx(ref[0], abs=1e-5)
     np.testing.assert_allclose(cal.bias_[1:], ref[1:], atol=1e-5)
     assert cal.floor_ == pytest.approx(1 / (2 * (n + 1) * 2))  # Krichevsky-Trofimov
