@@ -333,8 +333,8 @@ def sklearn_calibrated(frozen, Xc, yc, Xt):
                 warnings.simplefilter("ignore")
                 out[m] = CalibratedClassifierCV(frozen, method=m, cv=KFold(2)).fit(
                     Xc, yc).predict_proba(Xt)
-        except ValueError:  # e.g. a class missing from a fold
-            pass
+        except (ValueError, IndexError):  # a class missing from a fold (IndexError from
+            pass  # scikit-learn 1.9's cross_val_predict when a fold lacks a class)
     return out
 
 

@@ -414,8 +414,8 @@ def _handler(args: argparse.Namespace) -> int:
             # the page recommends another cutoff than the least-cost one (the settled or Bayes
             # cutoff, a capacity or a new prevalence): say both, the recommendation first
             summary["recommended_cutoff"] = float(rec.cutoff)
-            line += (f", recommended cutoff {rec.cutoff:.4f} ({rec.name}; least-cost cutoff on "
-                     f"these rows {content.chosen_cutoff:.4f})")
+            line += (f", recommended cutoff {rec.cutoff:.4f} ({rec.name}; least-cost cutoff "
+                     f"{content.chosen_cutoff:.4f} on these rows)")
     if content.target_prevalence is not None:
         summary.update(source_prevalence=float(content.source_prevalence),
                        target_prevalence=float(content.target_prevalence),
