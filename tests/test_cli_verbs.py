@@ -358,3 +358,21 @@ def test_report_summary_names_the_recommended_cutoff(tmp_path, capsys):
     assert got["cutoff"] == ref.least_cost and got["recommended_cutoff"] == ref.cutoff
     code, out, err = run(capsys, *args)
     assert f"recommended cutoff {ref.cutoff:.4f}" in out and f"{ref.least_cost:.4f}" in out
+
+
+def test_cutoff_text_explains_a_negative_cutoff(tmp_path, capsys):
+    # a forest's scores of exactly 0 and a dear false negative: "act on every row" needs a
+    # cutoff below 0, which the text says in words (a reader expects probabilities)
+    p = np.array([0.0, 0.0, 0.0, 0.1, 0.2, 0.4, 0.6, 0.9])
+    y = np.array([1, 0, 0, 1, 0, 1, 1, 1])
+    pd.DataFrame({"risk": p, "hit": y}).to_csv(tmp_path / "f.csv", index=False)
+    args = ["cutoff", "--scores", tmp_path / "f.csv", "--score-column", "risk", "--label-column",
+            "hit", "--cost-fp", 1, "--cost-fn", 50, "--resamples", 0]
+    code, out, err = run(capsys, *args, "--format", "json")
+    assert code == 0, err
+    assert json.loads(out)["cutoff"] < 0
+    code, out, err = run(capsys, *args)
+    assert "a cutoff below 0 acts on every row" in out
+    # a cutoff inside (0, 1): no such line
+    code, out, err = run(capsys, *args[:-4], "--cost-fn", 1, "--resamples", 0)
+    assert code == 0 and "below 0" not in out
