@@ -145,10 +145,12 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
         identity_test,
         scale_penalty,
     )
+    from ..shift._estimate import check_class_names, name_classes
     from ..shift._shift_tests import _source_moments_from_sums
 
     estimator, classes = _frozen_multiclass(owner, y)
     k = classes.shape[0]
+    names = check_class_names(classes, k)
     parts = rows_of(X, y, sample_weight, estimator).persist(_source_block, estimator, classes)
     try:
         class_weight, squared_weight, positive_rows, smallest = parts.reduce(_counts, k)
@@ -157,9 +159,9 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
         if np.any(class_weight <= 0):
             raise ValueError(
-                f"`y` has no (positively weighted) rows of class index(es) "
-                f"{np.flatnonzero(class_weight <= 0).tolist()}; every class needs held-out rows "
-                "to estimate its prior."
+                f"`y` has no (positively weighted) rows of "
+                f"{name_classes(np.flatnonzero(class_weight <= 0), names)}; every class needs "
+                "held-out rows to estimate its prior."
             )
         est = PriorEstimator(
             owner.method, calibration=owner.calibration, tol=owner.em_tol,
@@ -220,6 +222,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     finally:
         parts.release()  # release the persisted blocks on the workers
     est.n_classes_ = k
+    est.class_names_ = names
     est.calibrator_ = cal
     est.source_prior_ = class_weight / total
     est.confusion_ = hard / total
