@@ -29,6 +29,7 @@ from .calibration._binning import BinningMap
 from .calibration._identity import IdentityMap
 from .calibration._isotonic import IsotonicMap
 from .calibration._logodds import DEFAULT_CLIP, clip_from_smallest
+from .calibration._one_vs_rest import fit_one_vs_rest
 from .calibration._platt import PlattMap
 from .calibration._venn_abers import VennAbersMap
 
@@ -374,15 +375,18 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             out[:, k] = scores[:, k] - logsumexp(np.delete(scores, k, axis=1), axis=1)
         return out
 
-    def _map_input(self, cal: CalibrationMap, scores: np.ndarray) -> np.ndarray:
+    def _map_input(
+        self, cal: CalibrationMap, scores: np.ndarray, log_odds: bool | None = None
+    ) -> np.ndarray:
         """What a map sees: order-based maps the full-resolution scores; parametric maps, for
         probability outputs, log-odds clipped to ``±logit(1 - clip)`` (log-probabilities floored
         at ``log(clip)``) so that a few extreme, confidently wrong rows cannot dominate the fit.
+        ``log_odds=True``: every column of ``scores`` is a binary log-odds (one-vs-rest).
         """
         if self.response_ == "decision_function" or isinstance(cal, _ORDER_BASED):
             return scores
         clip = self._clip_value()
-        if scores.ndim == 1:
+        if scores.ndim == 1 or log_odds:
             bound = np.log1p(-clip) - np.log(clip)
             return np.clip(scores, -bound, bound)
         return np.maximum(scores, np.log(clip))
@@ -410,11 +414,11 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         pos = np.bincount(np.asarray(y_index, dtype=np.intp), weights=w, minlength=n_classes)
         fitted = (pos > 0) & (pos < total)
         maps: list = [None] * n_classes
-        for k in np.flatnonzero(fitted):
-            yk = (y_index == k).astype(int)
-            maps[k] = one_vs_rest_copy(template, n_classes).fit(
-                self._map_input(template, ovr[:, k]), yk, sample_weight=w
-            )
+        ks = np.flatnonzero(fitted)
+        # the k binary maps together: inputs checked once, Platt and beta solved in one batch
+        S = self._map_input(template, ovr, log_odds=True)
+        for k, m in zip(ks, fit_one_vs_rest(template, S, y_index, w, ks), strict=True):
+            maps[k] = m
         if not fitted.all():
             pooled = None
             if self.response_ == "decision_function" and fitted.sum() >= 2:
