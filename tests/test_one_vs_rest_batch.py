@@ -140,3 +140,40 @@ def test_one_vs_rest_together_reports_bad_input_as_one_at_a_time():
     w = np.array([1.0, 0.0, 1.0, 1.0, 0.0, 1.0])
     with pytest.raises(ValueError, match="zero for every row of class 1"):
         fit_one_vs_rest(BetaMap(), np.ones((6, 3)) * np.arange(6)[:, None], y, w, [1])
+
+
+def test_one_vs_rest_scores_are_bit_identical_to_one_class_at_a_time():
+    """The one-vs-rest log-odds come from one logsumexp over all classes; order-based maps
+    (binning) are sensitive to their rounding, so they must equal the per-class computation
+    ``s_k - logsumexp(s without column k)`` exactly, also across the row blocks."""
+    from scipy.special import logsumexp
+
+    from probwrap import CalibrationWrapper
+
+    rng = np.random.default_rng(3)
+    for n, k in ((50, 3), (70_000, 5), (300, 8), (300, 10)):
+        p = rng.dirichlet(np.full(k, 0.3), size=n)
+        p[::7, 1] = 0.0  # a forest's exact zeros
+        p[::11] = np.round(p[::11], 2)  # ties
+        s = np.log(np.maximum(p, np.nextafter(0.0, 1.0)))
+        m = CalibrationWrapper(method="platt")
+        m.response_ = "predict_proba"
+        got = m._one_vs_rest_scores(s)
+        want = np.column_stack(
+            [s[:, j] - logsumexp(np.delete(s, j, axis=1), axis=1) for j in range(k)]
+        )
+        assert np.array_equal(got, want)
+
+
+@pytest.mark.parametrize("template", TEMPLATES[:5], ids=repr)
+def test_one_vs_rest_predictions_in_one_pass_are_bit_identical(template):
+    from probwrap.calibration._one_vs_rest import predict_one_vs_rest
+
+    rng = np.random.default_rng(4)
+    n, k = 300, 4
+    S = rng.normal(size=(n, k)) * 3.0
+    y = rng.integers(0, k, size=n)
+    maps = fit_one_vs_rest(template, S, y, np.ones(n), range(k))
+    T = np.concatenate([rng.normal(size=(200, k)) * 10.0, np.full((2, k), 700.0), -S[:5]])
+    want = np.column_stack([m.predict(T[:, j]) for j, m in enumerate(maps)])
+    assert np.array_equal(predict_one_vs_rest(maps, T), want)

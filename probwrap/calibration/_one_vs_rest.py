@@ -17,13 +17,14 @@ import warnings
 from typing import Any
 
 import numpy as np
+from scipy.special import expit, log_expit
 
 from .._validation import check_sample_weight, power_of_two_unit
 from ._base import CalibrationMap, WeightScaleWarning, count_weights, one_vs_rest_copy
 from ._beta import BetaMap
 from ._platt import PlattMap, _weighted_logistic
 
-__all__ = ["batched_weighted_logistic", "fit_one_vs_rest"]
+__all__ = ["batched_weighted_logistic", "fit_one_vs_rest", "predict_one_vs_rest"]
 
 
 def batched_weighted_logistic(
@@ -249,3 +250,43 @@ def _solve_together(ready: list[tuple[CalibrationMap, tuple]], w: np.ndarray) ->
         else:
             Xb, t, wb = prepared
             m._set_solution(Xb, t, wb, coef[i], float(intercept[i]))
+
+
+def predict_one_vs_rest(maps: list, S: np.ndarray) -> np.ndarray | None:
+    """``np.column_stack([m.predict(S[:, j]) for j, m in enumerate(maps)])`` in one pass for a
+    list of fitted Platt maps or of fitted beta maps (not subclasses), else None.
+
+    The same element-wise operations as each map's ``predict`` (score limit, linear predictor,
+    logistic, output floor), applied to all columns at once, so the result is bit-identical.
+    Scores that are not all finite, or outputs that would not be, are left to the maps' own
+    ``predict`` (None), which reports them.
+    """
+    kind = type(maps[0]) if maps else None
+    if kind not in (PlattMap, BetaMap) or any(type(m) is not kind for m in maps):
+        return None
+    if S.shape[1] != len(maps) or not np.all(np.isfinite(S)):
+        return None
+    floor = np.array([float(getattr(m, "floor_", 0.0)) for m in maps])
+    if kind is PlattMap:
+        for m in maps:
+            m._limited(S[:0, 0])  # sets score_limit_ where a restored map has none yet
+        limits = [m.score_limit_ for m in maps]
+        if any(lim is not None for lim in limits):
+            if not all(lim is not None for lim in limits):
+                return None
+            bound = np.array(limits, dtype=float)
+            S = np.clip(S, -bound, bound)
+        slope = np.array([m.slope_ for m in maps])
+        intercept = np.array([m.intercept_ for m in maps])
+        with np.errstate(over="ignore"):
+            q = expit(slope * S + intercept)
+    else:
+        a = np.array([m.a_ for m in maps])
+        b = np.array([m.b_ for m in maps])
+        c = np.array([m.c_ for m in maps])
+        with np.errstate(over="ignore"):
+            q = expit(a * log_expit(S) + b * -log_expit(-S) + c)
+    q = np.clip(q, floor, 1.0 - floor)
+    if not np.all(np.isfinite(q)):
+        return None
+    return q
