@@ -20,6 +20,7 @@ from ..decision import (
     expected_costs,
     plugin_cutoff,
     search_cutoff,
+    settle_cutoff,
 )
 from ..metrics import (
     brier_score,
@@ -85,6 +86,9 @@ class ReportContent:
     interval_cutoff: float | None = None
     interval_name: str = ""
     plugin: float | None = None
+    # a score file's cutoffs through the rule of CostPolicyWrapper(strategy="tuned"):
+    # decision.settle_cutoff on the labelled rows of the report (None with a fitted policy)
+    settled: Any = None
     rules: list[RuleRow] = field(default_factory=list)
     cost_curve: Any = None
     cost_interval: Any = None
@@ -328,6 +332,11 @@ def collect_content(
         else:
             content.chosen_cutoff = float(res.cutoff)
             content.cutoff_source = "the least-cost search on the labelled rows of this report"
+            if content.plugin is not None:
+                # the recommendation uses the same settling test as the tuned policy
+                content.settled = notes.compute(
+                    "cutoff", "settled cutoff", settle_cutoff, p, y01.astype(np.intp), matrix,
+                    res, sample_weight=w, expected=(ValueError,))
             ci = notes.compute(
                 "cutoff", "cutoff interval", cutoff_interval, p, y01.astype(np.intp), matrix,
                 sample_weight=w, capacity=cap, score_bounds=(0.0, 1.0),
