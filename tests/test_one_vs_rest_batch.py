@@ -177,3 +177,14 @@ def test_one_vs_rest_predictions_in_one_pass_are_bit_identical(template):
     T = np.concatenate([rng.normal(size=(200, k)) * 10.0, np.full((2, k), 700.0), -S[:5]])
     want = np.column_stack([m.predict(T[:, j]) for j, m in enumerate(maps)])
     assert np.array_equal(predict_one_vs_rest(maps, T), want)
+
+
+def test_units_are_power_of_two_unit_per_column():
+    from probwrap._validation import power_of_two_unit
+    from probwrap.calibration._one_vs_rest import _powers_of_two_units
+
+    X = np.random.default_rng(5).normal(size=(4, 30, 2)) * np.array([1e-300, 3.0])
+    X[1, :, 0] = 0.0
+    X[2, 3, 1] = 1.5e308
+    want = [[power_of_two_unit(X[p, :, j]) for j in range(2)] for p in range(4)]
+    assert np.array_equal(_powers_of_two_units(X), np.array(want))
