@@ -31,6 +31,7 @@ from .calibration._isotonic import IsotonicMap
 from .calibration._logodds import DEFAULT_CLIP, clip_from_smallest
 from .calibration._one_vs_rest import fit_one_vs_rest, predict_one_vs_rest
 from .calibration._platt import PlattMap
+from .calibration._vector_scaling import VectorScalingMap
 from .calibration._venn_abers import VennAbersMap
 
 __all__ = ["CalibrationWrapper", "CALIBRATION_METHODS"]
@@ -424,9 +425,13 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         if scores.ndim == 1:
             return clone(template).fit(self._map_input(template, scores), y_index, sample_weight=w)
         if template.supports_multiclass:
-            return clone(template).fit(
-                self._map_input(template, scores), np.asarray(y_index), sample_weight=w
-            )
+            m = clone(template)
+            if type(start) is type(m) and type(m) is VectorScalingMap:
+                m._start_from = start  # the fit starts from the previous fold's parameters
+            try:
+                return m.fit(self._map_input(template, scores), np.asarray(y_index), sample_weight=w)
+            finally:
+                m.__dict__.pop("_start_from", None)
         if ovr is None:
             ovr = self._one_vs_rest_scores(scores)
         n_classes = scores.shape[1]
