@@ -219,3 +219,4 @@ def test_fits_started_from_another_folds_parameters_equal_cold_fits(kind):
     assert not hasattr(warm, "_start_from")
     assert _close(warm.scales_, cold.scales_) and _close(warm.intercepts_, cold.intercepts_)
     assert warm.boundary_ == cold.boundary_
+

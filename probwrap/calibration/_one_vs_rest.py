@@ -179,7 +179,11 @@ def _batched_newton(
             q = active[quad]
             sq = step[quad]
             theta[q] -= sq
-            stop = (decrement[quad] < 1e-26) | (
+            # (_weighted_logistic stops below a decrement of 1e-26; below 1e-20 the step
+            # just taken is below 1e-10 of the curvature's scale and, converging
+            # quadratically, leaves an error of the order of its square: the same parameters
+            # to rounding, one evaluation sooner)
+            stop = (decrement[quad] < 1e-20) | (
                 np.abs(sq).max(axis=1) < 1e-14 * (1.0 + np.abs(theta[q]).max(axis=1))
             )
             converged[q[stop]] = True
@@ -207,8 +211,8 @@ def _batched_newton(
                 # rounding as dec >= 1e-10) the step is accepted without computing the loss,
                 # as the test would accept it; elsewhere the test runs on computed losses.
                 big_u = np.abs(c_eta - eta[rows]).max(axis=1)
-                with np.errstate(over="ignore", invalid="ignore"):
-                    psi = np.where(big_u > 1e-8, (np.expm1(big_u) - big_u) / big_u**2, 0.5)
+                u = np.clip(big_u, 1e-8, 700.0)  # (psi(a) -> 1/2 as a -> 0; e^700 is finite)
+                psi = np.where(big_u > 1e-8, (np.expm1(u) - u) / (u * u), 0.5)
                 accept = lam * psi <= 0.99
                 f1 = np.full(rows.size, np.nan)  # the loss there, computed only if tested
                 test = np.flatnonzero(~accept)
