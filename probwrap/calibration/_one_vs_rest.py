@@ -189,9 +189,11 @@ def _batched_newton(
             converged[q[stop]] = True
             done[np.flatnonzero(quad)[stop]] = True
             go = q[~stop]
-            if go.size:
-                sel = None if go.size == P else go
-                eta[go], one_e[go], p[go], grad[go] = point(sel, theta[go])
+            if go.size == P:
+                eta, one_e, p, grad = point(None, theta)
+                f0[:] = np.nan
+            elif go.size:
+                eta[go], one_e[go], p[go], grad[go] = point(go, theta[go])
                 f0[go] = np.nan
         if not quad.all():
             # backtracking line search, each problem with its own step length
@@ -227,7 +229,10 @@ def _batched_newton(
                     )
                 if accept.all():
                     theta[rows], f0[rows] = cand, f1
-                    eta[rows], one_e[rows], p[rows], grad[rows] = c_eta, c_one_e, c_p, c_grad
+                    if sel is None:  # every problem: the new arrays replace the old ones
+                        eta, one_e, p, grad = c_eta, c_one_e, c_p, c_grad
+                    else:
+                        eta[rows], one_e[rows], p[rows], grad[rows] = c_eta, c_one_e, c_p, c_grad
                     break
                 acc = rows[accept]
                 theta[acc], f0[acc] = cand[accept], f1[accept]
