@@ -15,9 +15,17 @@ from sklearn.utils import check_random_state
 
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ..calibration._logodds import proba_to_log_proba
+from ._analytic import analytic_prior_interval, labelled_parameter_cov
 from ._calibration import BiasCorrectedScaling, heldout_clip
 from ._confusion import acc_prior, bbse_prior, heldout_confusion
-from ._estimate import BoundaryPriorWarning, PriorEstimate, _solve_prior, _warn_empty_columns
+from ._estimate import (
+    BoundaryPriorWarning,
+    PriorEstimate,
+    _solve_prior,
+    _warn_empty_columns,
+    check_class_names,
+    name_classes,
+)
 from ._interval import score_interval
 from ._resample import (  # noqa: F401  (_interval_from_draws: imported from here elsewhere)
     _interval_from_draws,
@@ -94,7 +102,11 @@ class PriorEstimator(_Resampling):
     interval : {"score", "bca", "percentile"}, default="score"
         ``"score"``: for two classes, the inverted two-sample score test
         (:func:`score_interval`; no resampling, both samples' error included, honest at the
-        edges); for more classes it falls back to ``"bca"``. ``"bca"``: bias-corrected and
+        edges); for more classes with ``method="em"`` the Wald interval of the delta method on
+        the EM fixed point, whose variance stacks the unlabelled rows' score with the labelled
+        rows' estimating equations of the calibration and the source prior (the M-estimator
+        sandwich; no resampling); other multiclass methods fall back to ``"bca"``. ``"bca"``:
+        bias-corrected and
         accelerated bootstrap interval (Efron 1987; acceleration from a grouped jackknife over
         both samples) over ``n_resamples`` Poisson resamples of both samples.
         ``"percentile"``: the plain percentile bootstrap interval.
@@ -110,6 +122,9 @@ class PriorEstimator(_Resampling):
     n_classes_ : int
     n_source_effective_ : float
         Kish's effective number of labelled rows.
+    class_names_ : tuple or None
+        Labels of the classes given to ``fit`` (``class_names``), used to name classes in
+        warnings; None names them by column index.
 
     Examples
     --------
@@ -184,26 +199,31 @@ class PriorEstimator(_Resampling):
 
     # -- fitting -------------------------------------------------------------------------------
     def fit(
-        self, proba: Any, y: Any, sample_weight: Any = None, *, effective_rows: float | None = None
+        self, proba: Any, y: Any, sample_weight: Any = None, *, effective_rows: float | None = None,
+        class_names: Any = None,
     ) -> PriorEstimator:
         """Learn from held-out posteriors ``proba`` (n, k) and class indices ``y`` in 0..k-1.
 
         ``effective_rows`` overrides Kish's effective number of labelled rows (for rows that
-        are bins of a tally, whose weights are counts of many rows).
+        are bins of a tally, whose weights are counts of many rows). ``class_names`` (one label
+        per column, kept as ``class_names_``) names the classes in warnings and errors, which
+        otherwise name them by column index.
         """
         self._check_params()
         p = check_proba(proba, name="proba", ndim=2)
         k = p.shape[1]
+        names = check_class_names(class_names, k)
         check_same_length(("proba", p), ("y", y))
         y_idx, _ = check_labels(y, name="y", classes=np.arange(k), min_classes=1)
         w = check_sample_weight(sample_weight, p.shape[0])
         counts = np.bincount(y_idx, weights=w, minlength=k)
         if np.any(counts <= 0):
             raise ValueError(
-                f"`y` has no (positively weighted) rows of class index(es) "
-                f"{np.flatnonzero(counts <= 0).tolist()}; every class needs held-out rows to "
-                "estimate its prior."
+                f"`y` has no (positively weighted) rows of "
+                f"{name_classes(np.flatnonzero(counts <= 0), names)}; every class needs "
+                "held-out rows to estimate its prior."
             )
+        self.class_names_ = names
         self._src = (p.copy(), np.asarray(y_idx, dtype=int), w)
         self._src_rows = None  # rows behind each entry of _src (None: one row each)
         self._boot = None
@@ -217,6 +237,12 @@ class PriorEstimator(_Resampling):
         self._source_score = _source_moments(
             _score_rows(self.calibrate(p), self.source_prior_), w, None,
             self.source_prior_, effective_rows,
+        )
+        # the labelled rows' share of the analytic interval (more than two classes): the
+        # sandwich covariance of the calibration and the source prior, a small matrix
+        self._labelled_cov = (
+            labelled_parameter_cov(self.calibrator_, p, y_idx, w, self.source_prior_,
+                                   self.n_source_effective_) if k > 2 else None
         )
         return self
 
@@ -260,6 +286,22 @@ class PriorEstimator(_Resampling):
                 f"{self.n_classes_} classes."
             )
         return p
+
+    def _eta_cov(self) -> np.ndarray | None:
+        """The labelled summary of the analytic interval (computed from the kept rows for an
+        estimator fitted before it was stored; None for two classes or without rows)."""
+        cov = getattr(self, "_labelled_cov", None)
+        if cov is None and self.n_classes_ > 2:
+            src = self._source_rows()
+            if src is not None and self._source_row_counts() is None:
+                cov = labelled_parameter_cov(self.calibrator_, src[0], src[1], src[2],
+                                             self.source_prior_, self.n_source_effective_)
+                self._labelled_cov = cov
+        return cov
+
+    def _names(self) -> tuple | None:
+        """Labels of the classes for messages (None: by column index)."""
+        return getattr(self, "class_names_", None)
 
     def _check_fitted(self) -> None:
         if not hasattr(self, "source_prior_"):
@@ -322,9 +364,10 @@ class PriorEstimator(_Resampling):
         if m in ("bbse", "bbse_soft"):
             s = m == "bbse_soft"
             return bbse_prior(p, soft if s else hard, src, soft=s, sample_weight=w,
-                              n_source=n_source)
+                              n_source=n_source, class_names=self._names())
         s = m == "pacc"
-        return acc_prior(p, soft if s else hard, soft=s, sample_weight=w, n_source=n_source)
+        return acc_prior(p, soft if s else hard, soft=s, sample_weight=w, n_source=n_source,
+                         class_names=self._names())
 
     def estimate(
         self,
@@ -357,9 +400,10 @@ class PriorEstimator(_Resampling):
         PriorEstimate
             ``prior`` is the point estimate (for ``method="em"`` the MAP estimate shrunk toward
             the source prior by ``prior_strength``; ``ml_prior`` the plain maximum-likelihood
-            one). ``interval`` is a bootstrap interval over Poisson resamples of both the
-            unlabelled and the labelled rows (BCa by default), built around the unpenalised
-            estimate and widened to contain ``prior``. ``shift_statistic`` and
+            one). ``interval`` is the score interval (two classes) or a bootstrap interval over
+            Poisson resamples of both the unlabelled and the labelled rows (BCa), built around
+            the unpenalised estimate and widened to contain ``prior``; ``ml_interval`` is the
+            same before that widening (the confidence interval of the class shares). ``shift_statistic`` and
             ``shift_pvalue`` come from the two-sample score test
             (:func:`shift_score_test`), whatever ``method``. ``n_dropped`` counts resamples
             dropped because a class vanished from the labelled resample (a
@@ -390,7 +434,7 @@ class PriorEstimator(_Resampling):
         point = self._point(p, wk, src, self.confusion_, self.soft_confusion_, n_source=n_src)
         ml = None
         if self.method == "em":
-            _warn_empty_columns(wk @ p, "predicted probability mass")
+            _warn_empty_columns(wk @ p, "predicted probability mass", self._names())
             ml = _solve_prior(p, wk, src, point.prior if np.all(point.prior > 0) else src,
                               float(self.tol), int(self.max_iter))[0]
             self._warn_boundary(ml, p, wk, n_eff)
@@ -400,7 +444,7 @@ class PriorEstimator(_Resampling):
                                     pooled=True)
         stat, pvalue = test.statistic, test.pvalue
         harm_scale = null_harm_scale(p, w, src, test.mean_cov)
-        bounds, dropped = None, 0
+        bounds, dropped, ml_bounds = None, 0, None
         if self.n_resamples > 0 and interval:
             source = self._source_rows()
             if not point.identified:
@@ -424,11 +468,34 @@ class PriorEstimator(_Resampling):
                     )
                 bounds = np.array([[1.0 - hi, 1.0 - lo], [lo, hi]])
                 centre = ml if ml is not None else point.prior
+                if ml is not None:
+                    ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
+            elif getattr(self, "interval", "score") == "score" and ml is not None and (
+                    self._eta_cov() is not None):
+                # more than two classes: the delta method on the EM fixed point, with the
+                # labelled rows' error through the calibration and the source prior
+                bounds = analytic_prior_interval(
+                    self.calibrator_, p_raw, w, n_eff, src, ml, self._eta_cov(),
+                    self.confidence_level,
+                )[0]
+                ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
+                bounds = _widen(bounds, point.prior, ml, n_eff, self.confidence_level)
             else:
                 rs = self.random_state if random_state is None else random_state
                 centre = ml if ml is not None else point.prior
+                if source is None and bool(self.resample_source):
+                    warnings.warn(
+                        "The labelled rows were not kept (more than 20,000 of them and "
+                        "keep_heldout=False), so this bootstrap interval redraws the unlabelled "
+                        "rows only and leaves out the labelled rows' error; fit with "
+                        "keep_heldout=True for it, or use interval='score'.",
+                        UserWarning,
+                        stacklevel=2,
+                    )
                 bounds, dropped = self._bootstrap(p_raw, w, centre, check_random_state(rs))
+                if ml is not None:
+                    ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
         return PriorEstimate(
             prior=point.prior,
@@ -444,6 +511,7 @@ class PriorEstimator(_Resampling):
             n_dropped=dropped,
             ml_prior=ml,
             null_harm_scale=harm_scale,
+            ml_interval=ml_bounds,
         )
 
     def _warn_boundary(self, ml: np.ndarray, p: np.ndarray, w: np.ndarray, n_eff: float) -> None:
@@ -473,12 +541,13 @@ class PriorEstimator(_Resampling):
             "the model separates the classes weakly" if worth < 0.25 else "there are few rows"
         )
         warnings.warn(
-            f"The maximum-likelihood share of class index {j} is at the edge "
+            f"The maximum-likelihood share of {name_classes(j, self._names())} is at the edge "
             f"({ml[j]:.4g}; source share {src[j]:.4g}): {why}. Each of the {n_eff:.4g} "
             f"effective unlabelled rows carries about {worth:.2g} of a labelled row's "
             f"information about this share, so the share is known only to about +-{1.96 * se:.2g}"
-            " (95 %). The reported prior is shrunk toward the source prior (prior_strength) and "
-            "the interval is wide; do not read the edge value as a finding.",
+            " (95 %). The reported prior is shrunk toward the source prior (prior_strength); do "
+            "not read the edge value as a finding (the interval says which shares the data "
+            "allow).",
             BoundaryPriorWarning,
             stacklevel=3,
         )
