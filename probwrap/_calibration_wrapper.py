@@ -119,8 +119,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         full-resolution log-odds ``log p1 - log p0``, which keep the order of probabilities deep
         in the tails; exact zeros become the smallest positive float. Platt's map (named by
         ``method``, or an ``auto`` candidate) is fitted as ``PlattMap(limit_scores=True)``,
-        which further clips its input at half its own output floor (see
-        :class:`~probwrap.calibration.PlattMap`).
+        which further clips the scores that lie far beyond every calibration row of the other
+        class (see :class:`~probwrap.calibration.PlattMap`).
     tally_resolution : float, default=1e-3
         Dask input only: bin width on the log-odds scale of the score tallies that the
         predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
@@ -394,8 +394,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             and self.response_ != "decision_function"
             and not isinstance(self.method, CalibrationMap)
         ):
-            # log-odds from probabilities: Platt's map clips them at half its output floor, so
-            # that rows at (or within 1e-12 of) 0 or 1 cannot flatten its slope (see PlattMap)
+            # log-odds from probabilities: Platt's map clips those far beyond every row of the
+            # other class, so that rows at (or within 1e-12 of) 0 or 1 cannot flatten its slope
+            # (see PlattMap)
             template = clone(template).set_params(limit_scores=True)
         if scores.ndim == 1:
             return clone(template).fit(self._map_input(template, scores), y_index, sample_weight=w)
