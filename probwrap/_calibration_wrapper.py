@@ -21,6 +21,7 @@ from ._heldout import (
 from ._validation import plain
 from .calibration._base import (
     CalibrationMap,
+    FewClassRowsWarning,
     WeightScaleWarning,
     count_weights,
     one_vs_rest_copy,
@@ -36,6 +37,11 @@ __all__ = ["CalibrationWrapper", "CALIBRATION_METHODS"]
 
 #: Maps that use only the order of the scores: they get full-resolution scores.
 _ORDER_BASED = (IsotonicMap, BinningMap, VennAbersMap)
+
+#: A map the user named warns (FewClassRowsWarning) when a class has at least one but fewer
+#: held-out rows than this: the common-practice minimum count per cell (Cochran 1954), as for
+#: PriorShiftWrapper's labelled rows.
+FEW_CLASS_ROWS = 5
 
 #: Exact zero probabilities become this (the smallest positive float) before taking logs.
 _TINY = np.nextafter(0.0, 1.0)
@@ -236,6 +242,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         if self.method == "auto":
             self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
         else:
+            self._warn_few_class_rows(ho.y_index, w)
             # a method the user named that cannot be fitted raises, naming the method
             try:
                 self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
@@ -266,6 +273,27 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
                     CALIBRATION_METHODS[fallback](), scores, ho.y_index, w
                 )
         return self
+
+    def _warn_few_class_rows(self, y_index: np.ndarray, w: np.ndarray) -> None:
+        """Warn, naming each class and its count, when a class has at least one but fewer than
+        ``FEW_CLASS_ROWS`` held-out rows of weight > 0 (rows, not weights: the scale of the
+        weights cannot change the warning). Absent classes have a warning of their own."""
+        counts = np.bincount(np.asarray(y_index, dtype=np.intp)[np.asarray(w) > 0],
+                             minlength=len(self.classes_))
+        few = np.flatnonzero((counts > 0) & (counts < FEW_CLASS_ROWS))
+        if few.size:
+            listed = ", ".join(
+                f"{plain(self.classes_[c])!r}: {int(counts[c])} row{'s' if counts[c] > 1 else ''}"
+                for c in few
+            )
+            warnings.warn(
+                f"CalibrationWrapper(method={plain(self.method_)!r}): class(es) with fewer than "
+                f"{FEW_CLASS_ROWS} held-out rows ({listed}); the map's part for them rests on "
+                "those rows and its regularisation, so their calibrated probabilities are "
+                "uncertain. Hold out more labelled rows of the class(es) named.",
+                FewClassRowsWarning,
+                stacklevel=3,
+            )
 
     def _count_scale_weights(self, w: np.ndarray) -> np.ndarray:
         """Weights as row counts for the maps (see ``docs/calibration.md``, "Weights")."""
