@@ -26,10 +26,12 @@ from .calibration._base import (
     count_weights,
     one_vs_rest_copy,
 )
+from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
 from .calibration._identity import IdentityMap
 from .calibration._isotonic import IsotonicMap
 from .calibration._logodds import DEFAULT_CLIP, clip_from_smallest
+from .calibration._one_vs_rest import fit_one_vs_rest, predict_one_vs_rest
 from .calibration._platt import PlattMap
 from .calibration._venn_abers import VennAbersMap
 
@@ -42,6 +44,12 @@ _ORDER_BASED = (IsotonicMap, BinningMap, VennAbersMap)
 #: held-out rows than this: the common-practice minimum count per cell (Cochran 1954), as for
 #: PriorShiftWrapper's labelled rows.
 FEW_CLASS_ROWS = 5
+
+#: One-vs-rest log-odds come from one logsumexp over all classes up to this many classes: the
+#: sums over the k - 1 other classes are then plain left-to-right sums whichever way NumPy runs
+#: the reduction, as in one call per class; from 8 terms on NumPy may sum them pairwise in one
+#: layout and not in the other, and order-based maps are sensitive to that rounding.
+_STACKED_LOGSUMEXP_MAX_CLASSES = 8
 
 #: Exact zero probabilities become this (the smallest positive float) before taking logs.
 _TINY = np.nextafter(0.0, 1.0)
@@ -397,20 +405,34 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         """Per-class binary scores (log-odds of each class against the rest)."""
         if self.response_ == "decision_function":
             return scores
+        n, k = scores.shape
         out = np.empty_like(scores)
-        for k in range(scores.shape[1]):
-            out[:, k] = scores[:, k] - logsumexp(np.delete(scores, k, axis=1), axis=1)
+        if k > _STACKED_LOGSUMEXP_MAX_CLASSES:
+            for i in range(k):
+                out[:, i] = scores[:, i] - logsumexp(np.delete(scores, i, axis=1), axis=1)
+            return out
+        # `part[:, others][:, i]` holds the other classes of class i: one logsumexp over the
+        # last axis for all classes (the same per-row operations as one call per class with
+        # np.delete, so bit-identical), in blocks of rows that keep it within ~8 MB
+        others = np.array([[j for j in range(k) if j != i] for i in range(k)], dtype=np.intp)
+        block = max(1, (1 << 20) // (k * (k - 1)))
+        for start in range(0, n, block):
+            part = scores[start : start + block]
+            out[start : start + block] = part - logsumexp(part[:, others], axis=2)
         return out
 
-    def _map_input(self, cal: CalibrationMap, scores: np.ndarray) -> np.ndarray:
+    def _map_input(
+        self, cal: CalibrationMap, scores: np.ndarray, log_odds: bool | None = None
+    ) -> np.ndarray:
         """What a map sees: order-based maps the full-resolution scores; parametric maps, for
         probability outputs, log-odds clipped to ``±logit(1 - clip)`` (log-probabilities floored
         at ``log(clip)``) so that a few extreme, confidently wrong rows cannot dominate the fit.
+        ``log_odds=True``: every column of ``scores`` is a binary log-odds (one-vs-rest).
         """
         if self.response_ == "decision_function" or isinstance(cal, _ORDER_BASED):
             return scores
         clip = self._clip_value()
-        if scores.ndim == 1:
+        if scores.ndim == 1 or log_odds:
             bound = np.log1p(-clip) - np.log(clip)
             return np.clip(scores, -bound, bound)
         return np.maximum(scores, np.log(clip))
@@ -439,11 +461,11 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         pos = np.bincount(np.asarray(y_index, dtype=np.intp), weights=w, minlength=n_classes)
         fitted = (pos > 0) & (pos < total)
         maps: list = [None] * n_classes
-        for k in np.flatnonzero(fitted):
-            yk = (y_index == k).astype(int)
-            maps[k] = one_vs_rest_copy(template, n_classes).fit(
-                self._map_input(template, ovr[:, k]), yk, sample_weight=w
-            )
+        ks = np.flatnonzero(fitted)
+        # the k binary maps together: inputs checked once, Platt and beta solved in one batch
+        S = self._map_input(template, ovr, log_odds=True)
+        for k, m in zip(ks, fit_one_vs_rest(template, S, y_index, w, ks), strict=True):
+            maps[k] = m
         if not fitted.all():
             pooled = None
             if self.response_ == "decision_function" and fitted.sum() >= 2:
@@ -514,13 +536,18 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         if ovr is None:
             ovr = self._one_vs_rest_scores(scores)
         kept = np.array([isinstance(m, IdentityMap) for m in calibrator])
-        cols = [
-            np.full(scores.shape[0], m)
-            if isinstance(m, float)
-            else m.predict(ovr[:, k] if kept[k] else self._map_input(m, ovr[:, k]))
-            for k, m in enumerate(calibrator)
-        ]
-        q = np.column_stack(cols)
+        q = None
+        if isinstance(calibrator[0], (PlattMap, BetaMap)):  # every class's map in one pass
+            q = predict_one_vs_rest(calibrator, self._map_input(calibrator[0], ovr, log_odds=True))
+        if q is None:
+            q = np.column_stack(
+                [
+                    np.full(scores.shape[0], m)
+                    if isinstance(m, float)
+                    else m.predict(ovr[:, k] if kept[k] else self._map_input(m, ovr[:, k]))
+                    for k, m in enumerate(calibrator)
+                ]
+            )
         if kept.any():
             return self._share_with_kept_classes(q, kept)
         total = q.sum(axis=1, keepdims=True)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Mapping
 from typing import Any
 
@@ -58,7 +59,9 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
     costs : None, mapping, array-like of shape (n_classes, n_actions) or callable, default=None
         Cost of each action (columns) when each class (rows, in ``classes_`` order) is true;
         negative entries are gains. A mapping is the binary shorthand with keys ``"tp"``,
-        ``"fp"``, ``"fn"``, ``"tn"`` (missing keys cost 0). A callable ``costs(X)`` returns one
+        ``"fp"``, ``"fn"``, ``"tn"`` (missing keys cost 0); its positive class is
+        ``classes_[1]`` (a warning says which label that is when the estimator's ``classes_``
+        are not sorted). A callable ``costs(X)`` returns one
         matrix per row, shape (n, n_classes, n_actions), e.g. built from an amount column of
         ``X``. ``None`` means the 0-1 loss and no tuning: the wrapper is then the plain
         classifier (its predictions are the argmax of ``predict_proba``) unless ``cutoff`` or
@@ -234,6 +237,34 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         if self.guarantee is not None:
             self._guarantee_args()
 
+    def _warn_unsorted_positive(self) -> None:
+        """Binary shorthand or a single cutoff on a model whose ``classes_`` are not sorted.
+
+        Both act on ``classes_[1]`` (scikit-learn's convention, the column of
+        ``predict_proba[:, 1]``). scikit-learn's own classifiers sort their labels, so that is
+        the larger label; a model from elsewhere may keep another order, and the positive class
+        is then not the one a reader of scikit-learn's convention expects: say which it is.
+        """
+        if not self._binary_only() or self.classes_.shape[0] != 2:
+            return
+        try:
+            ordered = bool(self.classes_[0] < self.classes_[1])
+        except TypeError:  # labels of types that do not compare: nothing to expect
+            return
+        if not ordered:
+            first, second = (plain(c) for c in self.classes_)
+            what = ("binary cost shorthand (tp/fp/fn/tn)" if isinstance(self.costs, Mapping)
+                    else "single `cutoff`")
+            warnings.warn(
+                f"The {what} treats the second of the estimator's `classes_` as the positive "
+                f"class: {second!r}. These `classes_` ({first!r}, {second!r}) are not in sorted "
+                f"order, so the positive class is not the larger label {first!r} as for "
+                "scikit-learn's own classifiers. If that is not meant, give the costs as a 2 x 2 "
+                "matrix whose rows follow `classes_`.",
+                UserWarning,
+                stacklevel=3,
+            )
+
     def _binary_only(self) -> bool:
         return isinstance(self.costs, Mapping) or (
             self.strategy == "fixed" and _scalar_cutoff(self.cutoff)
@@ -313,6 +344,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
                 f"{k} classes. Give an ({k}, n_actions) cost matrix, or per-class offsets as "
                 "`cutoff`."
             )
+        self._warn_unsorted_positive()
 
         row_costs = None
         if callable(self.costs):
@@ -434,6 +466,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
                 f"{k} classes. Give an ({k}, n_actions) cost matrix, or per-class offsets as "
                 "`cutoff`."
             )
+        self._warn_unsorted_positive()
         if callable(self.costs):
             matrix = None
             n_actions = first_block_row_costs(self, X, k, y, sample_weight).shape[2]

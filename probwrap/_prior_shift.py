@@ -325,7 +325,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             interval=self.interval,
         )
         rows = _tally_rows(self.tally_) if ho.from_tally else None
-        est.fit(ho.values, ho.y_index, ho.sample_weight, effective_rows=rows)
+        est.fit(ho.values, ho.y_index, ho.sample_weight, effective_rows=rows,
+                class_names=self.classes_)
         self._source_tally = self.tally_ if ho.from_tally else None
         if (not ho.from_tally and not self.keep_heldout
                 and np.count_nonzero(ho.sample_weight) > SMALL_HELDOUT_ROWS):

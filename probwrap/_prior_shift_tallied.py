@@ -51,11 +51,14 @@ def tallied_adapt(
             n_replicates=est.n_resamples, seed=replicate_seed(rs),
         )
         n_eff = rows if rows is not None else float(w.sum() ** 2 / np.dot(w, w))
+        ml_interval = (None if res.ml_prior is None else
+                       _widen(interval, res.ml_prior, res.ml_prior, n_eff, est.confidence_level))
         interval = _widen(interval, res.prior, centre, n_eff, est.confidence_level)
     else:
         interval = np.column_stack([np.zeros(k), np.ones(k)])
+        ml_interval = None
     dropped = getattr(est, "_last_dropped", 0)
-    res = replace(res, interval=interval, n_dropped=dropped)
+    res = replace(res, interval=interval, n_dropped=dropped, ml_interval=ml_interval)
     return res, interval
 
 

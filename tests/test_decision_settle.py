@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pytest
 from scipy.stats import norm
@@ -173,3 +175,19 @@ def test_class_offsets_kept_when_the_rows_support_them():
     a = settle_class_offsets(p, y, C3, tuned, sample_weight=u / u.sum())
     b = settle_class_offsets(p, y, C3, tuned, sample_weight=u * 1e-3)
     assert a.share == b.share
+
+
+def test_costs_near_the_largest_float_settle_like_scaled_ones():
+    # the rule depends on the costs only up to a common factor; squared costs of 1e308 used to
+    # overflow (inf - inf in the standard error) and the report warned "overflow" for them
+    rng = np.random.default_rng(11)
+    t = rng.beta(1, 3, 61)
+    y = (rng.uniform(size=61) < t).astype(int)
+    p = np.clip(t ** rng.uniform(0.4, 2.5), 1e-6, 1 - 1e-6)
+    small = settle_cutoff(p, y, {"fp": 1.0, "fn": 4.0})
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        big = settle_cutoff(p, y, {"fp": 2.5e307, "fn": 1e308})
+    assert not small.kept_plugin and big.cutoff == small.cutoff
+    assert np.isclose(big.excess, 2.5e307 * small.excess, rtol=1e-9)
+    assert np.isclose(big.excess_se, 2.5e307 * small.excess_se, rtol=1e-9)

@@ -172,8 +172,11 @@ def test_prior_numbers_match_library(three, report):
     for j in range(3):
         cells = [_val(v) for v in page.rows[f"prior:{j}"]]
         assert np.isclose(cells[0], np.mean(y == j))
-        assert np.isclose(cells[1], res.prior[j], atol=1e-6)
-        assert cells[2] <= res.prior[j] <= cells[3]
+        # the maximum-likelihood shares with their own interval, then the shrunk shares the
+        # rules use (the two differ here: 20 pseudo-rows against a few hundred unlabelled rows)
+        assert np.isclose(cells[1], res.ml_prior[j], atol=1e-6)
+        assert cells[2] <= res.ml_prior[j] <= cells[3]
+        assert np.isclose(cells[4], res.prior[j], atol=1e-6)
     assert np.isclose(_val(page.rows["shift_pvalue"][0]), res.shift_pvalue, rtol=1e-6)
     assert np.isclose(_val(page.rows["shift_statistic"][0]), res.shift_statistic, rtol=1e-6)
     # winter: both damage outcomes roughly double
@@ -201,7 +204,9 @@ def test_report_from_fitted_multiclass_wrappers(three, tmp_path):
                                     classes=[0, 1, 2], actions=ACTIONS))
     for j in range(3):
         assert np.isclose(_val(page.rows[f"offset:{j}"][0]), policy.class_offsets_[j])
-        assert np.isclose(_val(page.rows[f"prior:{j}"][1]), shift.target_prior_[j])
+        # maximum-likelihood share, its interval, then the shrunk share the wrapper applies
+        assert np.isclose(_val(page.rows[f"prior:{j}"][1]), shift.prior_estimate_.ml_prior[j])
+        assert np.isclose(_val(page.rows[f"prior:{j}"][-1]), shift.target_prior_[j])
     assert np.isclose(_val(page.ids["budget-threshold"]["data-value"]),
                       policy.action_budget_.saving_threshold)
     assert content.shift_pvalue == shift.shift_pvalue_

@@ -11,7 +11,13 @@ import re
 import numpy as np
 import pytest
 
-from probwrap.decision import capacity_cutoff, expected_costs, plugin_cutoff, search_cutoff
+from probwrap.decision import (
+    capacity_cutoff,
+    expected_costs,
+    plugin_cutoff,
+    search_cutoff,
+    settle_cutoff,
+)
 from probwrap.report import build_report
 from probwrap.shift import adjust_to_prior, shift_cutoff
 
@@ -46,7 +52,10 @@ def test_capacity_breaking_move_offers_the_capacity_cutoff(shifted):
     assert c.shift_pvalue < 0.01
     src, tgt = c.source_prevalence, c.target_prevalence
     moved = float(shift_cutoff(r.base_cutoff, src, tgt))
-    assert r.base_cutoff in (c.chosen_cutoff, c.plugin)
+    # the base rule is the settled cutoff of the labelled rows (the tuned policy's rule)
+    ref = settle_cutoff(p, y, COSTS, search_cutoff(p, y, MATRIX, capacity=0.25,
+                                                   score_bounds=(0, 1)))
+    assert r.base_cutoff == ref.cutoff == c.settled.cutoff
     # the moved cutoff would act on more of the unlabelled rows than the capacity allows ...
     assert np.mean(q > moved) > 0.25
     # ... so the box offers the capacity cutoff on the unlabelled rows instead
@@ -110,3 +119,36 @@ def test_huge_finite_costs_give_the_same_cutoffs_as_scaled_ones():
     assert np.isfinite(big.recommendation.expected_cost)
     assert np.isclose(big.recommendation.expected_cost,
                       small.recommendation.expected_cost * 2.5e307, rtol=1e-9)
+
+
+def _miscalibrated(seed):
+    # the draws of the sweep that found the two rules apart: probabilities bent by a power
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(40, 200))
+    t = rng.beta(1, 3, n)
+    y = (rng.uniform(size=n) < t).astype(int)
+    return np.clip(t ** rng.uniform(0.4, 2.5), 1e-6, 1 - 1e-6), y
+
+
+@pytest.mark.parametrize("seed", [0, 11, 5])
+def test_score_file_recommendation_is_the_tuned_policys_settled_cutoff(seed):
+    # one rule for a score file and for CostPolicyWrapper(strategy="tuned"): settle_cutoff.
+    # Seed 11: the old two-standard-error rule recommended the Bayes cutoff, seed 0 the
+    # least-cost cutoff; the settling test moves to a cutoff between the two in both
+    p, y = _miscalibrated(seed)
+    costs = {"fp": 1.0, "fn": 4.0}
+    content, page = build_report(y_true=y, y_prob=p, costs=costs, n_resamples=10)
+    ref = settle_cutoff(p, y, costs)
+    r = content.recommendation
+    assert r.cutoff == ref.cutoff
+    if ref.kept_plugin:
+        assert r.key == "plugin"
+    elif ref.cutoff != content.chosen_cutoff:
+        assert r.key == "settled" and ref.plugin < ref.cutoff or ref.cutoff < ref.plugin
+        assert re.search(r'<tr data-rule="settled" class="pw-recommended">', page)
+    assert "settle_cutoff" in " ".join(r.reasons)
+    realised = MATRIX_14[y, (p > r.cutoff).astype(int)].mean()
+    assert np.isclose(r.expected_cost, realised, rtol=1e-12)
+
+
+MATRIX_14 = np.array([[0.0, 1.0], [4.0, 0.0]])

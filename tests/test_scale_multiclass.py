@@ -236,3 +236,70 @@ def model_for(n_classes):
         y = y if n_classes == 3 else np.minimum(y, 1)
         _MODELS[n_classes] = FrozenEstimator(LogisticRegression(C=0.02).fit(X, y))
     return _MODELS[n_classes]
+
+
+@pytest.mark.parametrize("kind", ["forest", "naive_bayes"])
+@pytest.mark.parametrize("weights", ["none", "frequencies", "normalised"])
+def test_multiclass_dask_chooses_the_in_memory_floor_before_logarithms(client, kind, weights):
+    # Consistency test: the floor before logarithms (calibrator_.clip_) comes from per-block
+    # reductions (smallest non-zero probability of the rows of positive weight; counts) and
+    # equals the in-memory rule (probwrap.shift._calibration.heldout_clip). A fully grown
+    # forest of 20 trees outputs exact 0 (smallest non-zero 1/20: floor 1/40); Gaussian naive Bayes on
+    # well-separated classes outputs probabilities far below 1e-12, so the lower bound of half
+    # the map's output floor, 1/(2 (N + 1) (k - 1)), is what binds. The old fixed 1e-12 floor
+    # gives other log-probabilities and so another fitted scale (asserted below).
+    from sklearn.ensemble import RandomForestClassifier
+    from sklearn.naive_bayes import GaussianNB
+
+    from probwrap.shift._calibration import heldout_clip
+
+    def draw(n, seed, prior):  # naive Bayes: classes far apart; forest: the usual overlap
+        X, y = _data(n, seed, prior)
+        return (X + 5.0 * np.array([[0.0, 0.0], [1.5, 0.3], [0.4, 1.6]])[y] if kind ==
+                "naive_bayes" else X), y
+
+    X_tr, y_tr = draw(3000, 21, [0.5, 0.3, 0.2])
+    inner = (RandomForestClassifier(20, random_state=0) if kind == "forest"
+             else GaussianNB()).fit(X_tr, y_tr)
+    est = FrozenEstimator(inner)
+    X, y = draw(900, 22, [0.5, 0.3, 0.2])
+    X_new, _ = draw(3000, 23, [0.3, 0.3, 0.4])
+    rng = np.random.default_rng(3)
+    w = {"none": None,
+         "frequencies": rng.integers(0, 3, size=X.shape[0]).astype(float),
+         "normalised": rng.uniform(0.5, 1.5, size=X.shape[0])}[weights]
+    if weights == "normalised":
+        w = w / w.sum()  # sums to 1: Kish's effective size counts the rows
+    kw = dict(n_resamples=0)
+    remote = PriorShiftWrapper(est, **kw).fit(
+        da.from_array(X, chunks=(300, 2)), da.from_array(y, chunks=300),
+        sample_weight=None if w is None else da.from_array(w, chunks=300),
+    ).adapt(da.from_array(X_new, chunks=(1000, 2)))
+    local = PriorShiftWrapper(est, **kw).fit(X, y, sample_weight=w).adapt(X_new)
+    p = inner.predict_proba(X)
+    expected = heldout_clip(p, w)
+    assert local.calibrator_.clip_ == pytest.approx(expected, rel=1e-12)
+    # the minimum is exact; the Kish count may differ in the last bits (order of the sums)
+    assert remote.calibrator_.clip_ == pytest.approx(expected, rel=1e-12)
+    if kind == "forest":
+        kept = p[(w if w is not None else np.ones(len(p))) > 0]
+        assert expected == pytest.approx(0.5 * kept[kept > 0].min(), rel=1e-12)
+    else:
+        assert p.min() < 1e-12
+        from probwrap.calibration._base import count_weights
+        from probwrap.shift._calibration import _floor
+
+        n_rows = count_weights(np.ones(len(p)) if w is None else w)[0].sum()
+        assert expected == pytest.approx(0.5 * _floor(n_rows, 3), rel=1e-9)
+    # same floor, same sums: the fit agrees to the Newton / EM tolerances (1e-6)
+    np.testing.assert_allclose(remote.calibrator_.scale_, local.calibrator_.scale_, atol=1e-6)
+    np.testing.assert_allclose(remote.calibrator_.bias_, local.calibrator_.bias_, atol=1e-6)
+    np.testing.assert_allclose(remote.target_prior_, local.target_prior_, atol=1e-6)
+    np.testing.assert_allclose(remote.predict_proba(X_new), local.predict_proba(X_new), atol=1e-5)
+    # and the floor matters here: the in-memory fit with the old fixed floor is another map
+    from probwrap.calibration._logodds import proba_to_log_proba
+    from probwrap.shift import BiasCorrectedScaling
+
+    fixed = BiasCorrectedScaling(kind="temperature").fit_log_proba(
+        proba_to_log_proba(p, clip=1e-12), y, w)
+    assert abs(fixed.scale_[0] - local.calibrator_.scale_[0]) > 1e-3

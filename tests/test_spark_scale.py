@@ -239,7 +239,7 @@ def test_spark_input_errors_name_the_argument(spark, model):
     with pytest.raises(ValueError, match="batch_size"):
         PriorShiftWrapper(model).fit(df[COLS], df["damaged"]).monitor(frame, batch_size=100)
     three = FrozenEstimator(LogisticRegression().fit(df[COLS], np.arange(500) % 3))
-    with pytest.raises(ValueError, match=r"no \(positively weighted\) rows of class index"):
+    with pytest.raises(ValueError, match=r"no \(positively weighted\) rows of class 2;"):
         PriorShiftWrapper(three).fit(frame, "damaged")  # a multiclass model, class 2 never seen
     with pytest.raises(ValueError, match="one column besides"):
         tally_scores(frame, "damaged")

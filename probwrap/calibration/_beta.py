@@ -85,6 +85,16 @@ class BetaMap(CalibrationMap):
         return bool(self.smooth_targets)
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
+        X, t, w = self._prepare(scores, y, w)
+        coef, c, _ = _weighted_logistic(X, t, w)
+        self._set_solution(X, t, w, coef, c)
+
+    def _prepare(
+        self, scores: np.ndarray, y: np.ndarray, w: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Checks, features, targets and floor of a fit: returns the features ``[ln p,
+        -ln(1 - p)]``, the targets and the weights the logistic regression sees (shared with the
+        batched one-vs-rest fit, see :mod:`probwrap.calibration._one_vs_rest`)."""
         if not isinstance(self.smooth_targets, (bool, np.bool_)):
             raise ValueError(f"`smooth_targets` must be True or False; got {plain(self.smooth_targets)!r}.")
         X = _beta_features(scores)
@@ -95,19 +105,28 @@ class BetaMap(CalibrationMap):
                 "is a step; BetaMap keeps large finite coefficients (smoothed targets bound the "
                 "fitted values, not the map beyond the data). Prefer PlattMap here.",
                 UserWarning,
-                stacklevel=3,
+                stacklevel=4,
             )
         if self.smooth_targets:
             y = smoothed_binary_targets(y, w, self._rest_classes)
             self._set_floor(w, 2)
         w = w / power_of_two_unit(w)  # weights enter as a weighted mean; keeps the sum finite
+        return X, y, w
+
+    def _set_solution(
+        self, X: np.ndarray, y: np.ndarray, w: np.ndarray, both: np.ndarray, c_both: float
+    ) -> None:
+        """Keep the constrained optimum, given the unconstrained fit ``(both, c_both)``."""
         wn = w / w.sum()
         best: tuple[float, float, float] | None = None
         best_loss = np.inf
         # faces of {a >= 0, b >= 0}: both free, a fixed at 0, b fixed at 0, both fixed at 0
         for free in ((0, 1), (1,), (0,), ()):
             coef = np.zeros(2)
-            if free:
+            if free == (0, 1):
+                coef[:] = both
+                c = c_both
+            elif free:
                 sub, c, _ = _weighted_logistic(X[:, list(free)], y, w)
                 coef[list(free)] = sub
             else:

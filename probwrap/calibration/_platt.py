@@ -213,6 +213,13 @@ class PlattMap(CalibrationMap):
         self.limit_scores = limit_scores
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
+        x, t = self._prepare(scores, y, w)
+        self._set_solution(*_weighted_logistic(x[:, None], t, w))
+
+    def _prepare(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Checks, targets, floor and score limit of a fit: returns the scores the logistic
+        regression sees and its targets (shared with the batched one-vs-rest fit, see
+        :mod:`probwrap.calibration._one_vs_rest`)."""
         if not isinstance(self.smooth_targets, (bool, np.bool_)):
             raise ValueError(f"`smooth_targets` must be True or False; got {plain(self.smooth_targets)!r}.")
         if scores.shape[0] > 2 and scores.min() >= 0.0 and scores.max() <= 1.0:
@@ -221,7 +228,7 @@ class PlattMap(CalibrationMap):
                 "PlattMap takes log-odds (e.g. a decision_function value). Convert probabilities "
                 "first with probwrap.calibration.proba_to_log_odds.",
                 UserWarning,
-                stacklevel=3,
+                stacklevel=4,
             )
         if not isinstance(self.limit_scores, (bool, np.bool_)):
             raise ValueError(f"`limit_scores` must be True or False; got {plain(self.limit_scores)!r}.")
@@ -241,14 +248,17 @@ class PlattMap(CalibrationMap):
                     "is infinite; PlattMap keeps a large finite slope. Use smooth_targets=True "
                     "for a finite fit.",
                     UserWarning,
-                    stacklevel=3,
+                    stacklevel=4,
                 )
-        coef, intercept, converged = _weighted_logistic(scores[:, None], t, w)
+        return scores, t
+
+    def _set_solution(self, coef: np.ndarray, intercept: float, converged: bool) -> None:
+        """Store the solver's result (warns when it did not converge)."""
         if not converged and self.smooth_targets:
             warnings.warn(
                 "PlattMap: Newton iterations did not reach full precision.",
                 ConvergenceWarning,
-                stacklevel=3,
+                stacklevel=4,
             )
         self.slope_ = float(coef[0])
         self.intercept_ = float(intercept)

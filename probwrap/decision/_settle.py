@@ -142,6 +142,11 @@ def settle_cutoff(
     if search is None:
         search = search_cutoff(s, yi, matrix, sample_weight=w, score_bounds=(0.0, 1.0))
     t0 = plugin_cutoff(matrix)
+    # costs divided by a power of two near the largest (exact): squares of costs near the
+    # largest float would overflow; excess and its error are scaled back at the end
+    top = float(np.max(np.abs(matrix)))
+    scale = 2.0 ** float(np.floor(np.log2(top))) if top > 0 else 1.0
+    matrix = matrix / scale
     total = float(w.sum())
     pi1 = float(w[yi == 1].sum()) / total
     pi0 = 1.0 - pi1
@@ -151,7 +156,7 @@ def settle_cutoff(
 
     # weighted shares of negative / positive rows flagged at every searched cutoff: from
     # cost = base + a0 f0 + a1 f1 and share = f0 + f1
-    cost = np.asarray(search.costs, float)
+    cost = np.asarray(search.costs, float) / scale
     share = np.asarray(search.flagged_share, float)
     f0 = np.clip((cost - base - a1 * share) / (a0 - a1), 0.0, pi0)
     f1 = np.clip(share - f0, 0.0, pi1)
@@ -182,15 +187,15 @@ def settle_cutoff(
     tol = 1e-9 * max(abs(a0), abs(a1))
     cap = search.capacity
     if ex_t <= z * se_t + tol and (cap is None or f0_t + f1_t <= cap + 1e-12):
-        return SettledCutoff(float(t0), float(t0), float(search.cutoff), True, float(ex_t),
-                             float(se_t), level)
+        return SettledCutoff(float(t0), float(t0), float(search.cutoff), True,
+                             float(scale * ex_t), float(scale * se_t), level)
     ex, se = excess_and_se(f0, f1, base + a0 * f0 + a1 * f1)
     ok = admissible & (ex <= z * se + tol)
     ok[best] = True
     cands = np.flatnonzero(ok)
     chosen = float(cutoffs[cands[np.argmin(np.abs(cutoffs[cands] - t0))]])
-    return SettledCutoff(chosen, float(t0), float(search.cutoff), False, float(ex_t),
-                         float(se_t), level)
+    return SettledCutoff(chosen, float(t0), float(search.cutoff), False, float(scale * ex_t),
+                         float(scale * se_t), level)
 
 
 @dataclass(frozen=True)

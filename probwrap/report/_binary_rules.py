@@ -14,8 +14,8 @@ from ..shift import shift_cutoff
 from ._common import Recommendation
 
 __all__ = ["RuleRow", "BAYES_NAME", "HALF_NAME", "HINDSIGHT_NAME", "CAPACITY_NAME",
-           "CHOSEN_NAMES", "POLICY_SOURCES", "rule_row", "cost_scale", "ScaledCosts",
-           "target_columns", "recommend", "flagged_share"]
+           "CHOSEN_NAMES", "POLICY_SOURCES", "SETTLED_NAME", "rule_row", "cost_scale",
+           "ScaledCosts", "target_columns", "recommend", "flagged_share"]
 
 
 @dataclass
@@ -39,6 +39,9 @@ HINDSIGHT_NAME = "least-cost cutoff on these rows (hindsight)"
 # what a tuned policy's ``cutoff_interval_`` is the interval of (``cost_curve_.cutoff``)
 HELDOUT_LEAST_COST_NAME = "least-cost cutoff on the policy's held-out predictions"
 CAPACITY_NAME = "capacity cutoff"
+# a score file's recommendation when the Bayes cutoff is rejected but the least-cost cutoff is
+# not the nearest one the rows allow (decision.settle_cutoff)
+SETTLED_NAME = "settled cutoff (nearest the Bayes cutoff not shown to cost more)"
 CHOSEN_NAMES = {
     "tuned": "tuned cutoff",
     "bayes": "Bayes cutoff of the fitted policy",
@@ -144,7 +147,33 @@ def recommend(content, y01, p, w, q, E, notes) -> None:
                                       content.chosen_cutoff, content.plugin)
         said = (f"on the labelled rows the {chosen.label} costs {diff:+.4g} per row against "
                 f"the {BAYES_NAME} (standard error {se:.2g})")
-        if searched_here:
+        settled = getattr(content, "settled", None)
+        if searched_here and settled is not None:
+            # one rule with CostPolicyWrapper(strategy="tuned"): decision.settle_cutoff
+            said = (f"on the labelled rows the {chosen.label} costs {diff:+.4g} per row against "
+                    f"the {BAYES_NAME} (standard error {settled.excess_se:.2g})")
+            test = (f"a one-sided paired test at the {100 * settled.level:g}% level, the rule "
+                    "of the tuned cost policy (probwrap.decision.settle_cutoff)")
+            if settled.kept_plugin:
+                key, name, cutoff = "plugin", BAYES_NAME, content.plugin
+                reasons.append(f"The {BAYES_NAME} needs no search and {said}. By {test}, these "
+                               f"rows do not show that the {BAYES_NAME} costs more, so it is "
+                               "kept: the search on these same rows adds nothing reliable.")
+            elif settled.cutoff == content.chosen_cutoff:
+                reasons.append(f"{said[0].upper()}{said[1:]}. By {test}, the {BAYES_NAME} "
+                               "costs more, and no cutoff nearer it is as good, so the "
+                               f"{chosen.label} is kept; it was searched on these same rows, so "
+                               "this advantage is optimistic.")
+            else:
+                key, name, cutoff = "settled", SETTLED_NAME, float(settled.cutoff)
+                reasons.append(f"{said[0].upper()}{said[1:]}. By {test}, the {BAYES_NAME} "
+                               "costs more, so the recommended cutoff is the one nearest the "
+                               f"{BAYES_NAME} among those these rows do not show to cost more "
+                               f"than the least: {cutoff:.4f}.")
+                if key not in rows:
+                    content.rules.insert(1, rule_row(key, name, cutoff, y01, p, matrix,
+                                                     content.sample_weight, cap))
+        elif searched_here:  # no settling result (it could not be computed): two errors
             if diff < -2 * se:
                 reasons.append(f"{said[0].upper()}{said[1:]}: more than twice its standard "
                                "error, so it is kept; it was searched on these same rows, so "

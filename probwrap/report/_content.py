@@ -20,6 +20,7 @@ from ..decision import (
     expected_costs,
     plugin_cutoff,
     search_cutoff,
+    settle_cutoff,
 )
 from ..metrics import (
     brier_score,
@@ -85,6 +86,9 @@ class ReportContent:
     interval_cutoff: float | None = None
     interval_name: str = ""
     plugin: float | None = None
+    # a score file's cutoffs through the rule of CostPolicyWrapper(strategy="tuned"):
+    # decision.settle_cutoff on the labelled rows of the report (None with a fitted policy)
+    settled: Any = None
     rules: list[RuleRow] = field(default_factory=list)
     cost_curve: Any = None
     cost_interval: Any = None
@@ -92,6 +96,11 @@ class ReportContent:
     source_prevalence: float | None = None
     target_prevalence: float | None = None
     target_interval: tuple[float, float] | None = None
+    #: EM: the plain maximum-likelihood prevalence, its interval before it is widened to contain
+    #: the shrunk ``target_prevalence``, and the pseudo-rows of that shrinkage
+    ml_prevalence: float | None = None
+    ml_interval: tuple[float, float] | None = None
+    prior_strength: float | None = None
     shift_statistic: float | None = None
     shift_pvalue: float | None = None
     n_unlabelled: int = 0
@@ -145,6 +154,19 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes) -> list[Metric
                                 {key: label for key, label, *_ in specs})
     return [metric_row(notes, key, label, fn, y, p, w, ideal, n_resamples, level, seed, **kw)
             for key, label, fn, kw, ideal in specs]
+
+
+def _maximum_likelihood(content: Any, res: Any, strength: Any) -> None:
+    """Copy the plain maximum-likelihood prevalence and its own interval (EM) to ``content``,
+    so the report can show them beside the shrunk estimate it acts on."""
+    ml = getattr(res, "ml_prior", None)
+    if ml is None:
+        return
+    content.ml_prevalence = float(ml[1])
+    iv = getattr(res, "ml_interval", None)
+    if iv is not None:
+        content.ml_interval = (float(iv[1, 0]), float(iv[1, 1]))
+    content.prior_strength = None if strength is None else float(strength)
 
 
 def collect_content(
@@ -310,6 +332,11 @@ def collect_content(
         else:
             content.chosen_cutoff = float(res.cutoff)
             content.cutoff_source = "the least-cost search on the labelled rows of this report"
+            if content.plugin is not None:
+                # the recommendation uses the same settling test as the tuned policy
+                content.settled = notes.compute(
+                    "cutoff", "settled cutoff", settle_cutoff, p, y01.astype(np.intp), matrix,
+                    res, sample_weight=w, expected=(ValueError,))
             ci = notes.compute(
                 "cutoff", "cutoff interval", cutoff_interval, p, y01.astype(np.intp), matrix,
                 sample_weight=w, capacity=cap, score_bounds=(0.0, 1.0),
@@ -356,6 +383,8 @@ def collect_content(
         content.shift_statistic = float(prior_shift.shift_statistic_)
         content.shift_pvalue = float(prior_shift.shift_pvalue_)
         content.prior_method = prior_shift.method
+        _maximum_likelihood(content, getattr(prior_shift, "prior_estimate_", None),
+                            getattr(prior_shift, "prior_strength", None))
         if X_unlabelled is not None and batch_size is not None:
             step("prevalence by batch", 3)
             content.batch_table = notes.compute(
@@ -364,7 +393,8 @@ def collect_content(
     elif q is not None:
         est = PriorEstimator(n_resamples=n_resamples, confidence_level=confidence_level,
                              random_state=int(rng.randint(2**31 - 1)))
-        est.fit(np.column_stack([1.0 - p, p]), y01.astype(np.intp), w)
+        est.fit(np.column_stack([1.0 - p, p]), y01.astype(np.intp), w,
+                class_names=content.class_names)
         est_res = notes.compute("prevalence", "estimated prevalence", est.estimate,
                                 np.column_stack([1.0 - q, q]))
         content.source_prevalence = float(est.source_prior_[1])
@@ -374,6 +404,7 @@ def collect_content(
                                        float(est_res.interval[1, 1]))
         content.shift_statistic = float(est_res.shift_statistic)
         content.shift_pvalue = float(est_res.shift_pvalue)
+        _maximum_likelihood(content, est_res, est.prior_strength)
         if batch_size is not None:
             step("prevalence by batch", 3)
             content.batch_table = notes.compute(

@@ -73,6 +73,11 @@ class MulticlassReportContent:
     source_prior: np.ndarray | None = None
     target_prior: np.ndarray | None = None
     target_interval: np.ndarray | None = None
+    #: EM: the plain maximum-likelihood shares, their interval before it is widened to contain
+    #: the shrunk ``target_prior``, and the pseudo-rows of that shrinkage
+    ml_prior: np.ndarray | None = None
+    ml_interval: np.ndarray | None = None
+    prior_strength: float | None = None
     shift_statistic: float | None = None
     shift_pvalue: float | None = None
     n_unlabelled: int = 0
@@ -91,6 +96,18 @@ class MulticlassReportContent:
     @property
     def target_prevalence(self) -> None:
         return None
+
+
+def _maximum_likelihood(content: Any, res: Any, strength: Any) -> None:
+    """Copy the plain maximum-likelihood shares and their own interval (EM) to ``content``, so
+    the report can show them beside the shrunk estimate it acts on."""
+    ml = getattr(res, "ml_prior", None)
+    if ml is None:
+        return
+    content.ml_prior = np.asarray(ml, dtype=float)
+    iv = getattr(res, "ml_interval", None)
+    content.ml_interval = None if iv is None else np.asarray(iv, dtype=float)
+    content.prior_strength = None if strength is None else float(strength)
 
 
 def _metric_rows(y, p, w, n_bins, n_resamples, level, seed, notes) -> list[MetricRow]:
@@ -222,16 +239,19 @@ def collect_general_content(
         content.shift_statistic = float(prior_shift.shift_statistic_)
         content.shift_pvalue = float(prior_shift.shift_pvalue_)
         content.prior_method = str(prior_shift.method)
+        _maximum_likelihood(content, getattr(prior_shift, "prior_estimate_", None),
+                            getattr(prior_shift, "prior_strength", None))
     elif q is not None:
         est = PriorEstimator(n_resamples=n_resamples, confidence_level=confidence_level,
                              random_state=int(rng.randint(2**31 - 1)))
-        est.fit(proba, y_index, w)
+        est.fit(proba, y_index, w, class_names=content.class_names)
         res = notes.compute("prevalence", "estimated class shares", est.estimate, q)
         content.source_prior = np.asarray(est.source_prior_, dtype=float)
         content.target_prior = np.asarray(res.prior, dtype=float)
         content.target_interval = res.interval
         content.shift_statistic = float(res.shift_statistic)
         content.shift_pvalue = float(res.shift_pvalue)
+        _maximum_likelihood(content, res, est.prior_strength)
     if (content.target_prior is not None and q is not None and matrix is not None
             and np.all(content.source_prior > 0) and np.all(content.target_prior > 0)):
         general_target_columns(content, proba, y_index, w, rule_costs, q, rule_fns,

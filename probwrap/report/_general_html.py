@@ -212,18 +212,30 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         )
         return "".join(parts)
     level = f"{c.confidence_level:.0%}"
-    iv = c.target_interval
+    ml = getattr(c, "ml_prior", None)
+    ml_iv = getattr(c, "ml_interval", None)
+    # the shrunk estimate differs from the maximum-likelihood one at the shown precision: show
+    # both, the interval with the estimate it belongs to (not widened to the other)
+    both = ml is not None and float(np.max(np.abs(ml - c.target_prior))) >= 5e-5
+    iv = ml_iv if ml_iv is not None else c.target_interval
+    strength = getattr(c, "prior_strength", None)
+    pull = (f"as if {strength:g} labelled rows at the source shares were added"
+            if strength is not None else "toward the source shares")
     rows = "".join(
         f'<tr data-item="prior:{j}"><td>{_text(name)}</td>{_num(c.source_prior[j])}'
-        f"{_num(c.target_prior[j])}"
+        f"{_num(ml[j] if both else c.target_prior[j])}"
         + (f"{_num(iv[j, 0])}{_num(iv[j, 1])}" if iv is not None else "")
+        + (f"{_num(c.target_prior[j])}" if both else "")
         + "</tr>"
         for j, name in enumerate(c.class_names)
     )
     parts.append(
         '<table id="prevalence-summary"><thead><tr><th>class</th><th>source share</th>'
-        f"<th>estimated target share ({_text(c.prior_method)})</th>"
+        + (f"<th>estimated target share, maximum likelihood ({_text(c.prior_method)})</th>"
+           if both else f"<th>estimated target share ({_text(c.prior_method)})</th>")
         + (f"<th>{level} low</th><th>{level} high</th>" if iv is not None else "")
+        + (f"<th>shrunk toward the source shares ({pull}); used by the rules</th>"
+           if both else "")
         + f"</tr></thead><tbody>{rows}"
         f'<tr data-item="shift_statistic"><td>shift test statistic (score test, on the '
         f"chi-square scale, {c.n_classes - 1} df)</td>{_num(c.shift_statistic)}</tr>"
@@ -239,6 +251,19 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         f"<p>Estimated from {c.n_unlabelled or 'the'} unlabelled rows, assuming only the class "
         f"shares changed (prior shift). {verdict}</p>"
     )
+    if both:
+        outside = iv is not None and bool(np.any(
+            (c.target_prior < iv[:, 0]) | (c.target_prior > iv[:, 1])))
+        parts.append(
+            f'<p id="prevalence-shrunk">The {level} intervals are confidence intervals for the '
+            "class shares of the population the unlabelled rows come from, around the "
+            "maximum-likelihood estimate. The rules use that estimate shrunk toward the source "
+            f"shares ({pull}), so that a noisy estimate does not move every decision."
+            + (" Here a shrunk share lies outside its interval: the unlabelled rows are too few "
+               "to outweigh the pull toward the labelled shares. Read the moved rules as "
+               "cautious, not as an estimate of the new shares." if outside else "")
+            + "</p>"
+        )
     parts.append(notes_box([n for n in c.notes if n.key == "prevalence"], "notes-prevalence"))
     if "class_prior" in figures:  # drawn with matplotlib only (the plot extra)
         parts.append(_figure(

@@ -228,20 +228,42 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
             f"{_positive(c)}).</p>"
         )
     else:
-        iv = c.target_interval
+        ml = getattr(c, "ml_prevalence", None)
+        ml_iv = getattr(c, "ml_interval", None)
+        # the shrunk estimate differs from the maximum-likelihood one at the shown precision:
+        # show both, the interval with the estimate it belongs to (not widened to the other)
+        both = ml is not None and abs(ml - c.target_prevalence) >= 5e-5
+        iv = ml_iv if ml_iv is not None else c.target_interval
+        level = f"{c.confidence_level:.0%}"
+        whose = " of the maximum-likelihood estimate" if both else ""
+        interval_rows = (
+            f'<tr data-item="target_low"><td>{level} interval{whose}, low</td>'
+            f'{_num(iv[0])}</tr><tr data-item="target_high"><td>'
+            f"{level} interval{whose}, high</td>{_num(iv[1])}</tr>"
+            if iv is not None else ""
+        )
+        strength = getattr(c, "prior_strength", None)
+        pull = (f"as if {strength:g} labelled rows at the source prevalence were added"
+                if strength is not None else "toward the source prevalence")
+        if both:
+            estimate_rows = (
+                f'<tr data-item="target_ml"><td>estimated target prevalence, maximum '
+                f"likelihood ({_text(c.prior_method)})</td>{_num(ml)}</tr>" + interval_rows
+                + f'<tr data-item="target"><td>estimated target prevalence, shrunk toward the '
+                f"source prevalence ({pull}); used by the rules</td>"
+                f"{_num(c.target_prevalence)}</tr>"
+            )
+        else:
+            estimate_rows = (
+                f'<tr data-item="target"><td>estimated target prevalence '
+                f"({_text(c.prior_method)})</td>{_num(c.target_prevalence)}</tr>" + interval_rows
+            )
         parts.append(
             '<table id="prevalence-summary"><thead><tr><th>quantity</th><th>value</th></tr>'
             "</thead><tbody>"
             f'<tr data-item="source"><td>source prevalence (labelled rows)</td>'
             f"{_num(c.source_prevalence)}</tr>"
-            f'<tr data-item="target"><td>estimated target prevalence ({_text(c.prior_method)})'
-            f"</td>{_num(c.target_prevalence)}</tr>"
-            + (
-                f'<tr data-item="target_low"><td>{c.confidence_level:.0%} interval, low</td>'
-                f'{_num(iv[0])}</tr><tr data-item="target_high"><td>'
-                f"{c.confidence_level:.0%} interval, high</td>{_num(iv[1])}</tr>"
-                if iv is not None else ""
-            )
+            + estimate_rows
             + f'<tr data-item="shift_statistic"><td>shift test statistic (score test, on the '
             f"chi-square scale, 1 df)</td>{_num(c.shift_statistic)}</tr>"
             f'<tr data-item="shift_pvalue"><td>shift test p-value</td>'
@@ -263,6 +285,21 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
             f"{c.n_unlabelled or 'the'} unlabelled rows, assuming only the class shares of "
             f"{_positive(c)} and {_class_pair(c)[0]} changed (prior shift). {verdict}</p>"
         )
+        if both:
+            outside = iv is not None and not iv[0] <= c.target_prevalence <= iv[1]
+            parts.append(
+                f'<p id="prevalence-shrunk">The {level} interval is a confidence interval for '
+                "the prevalence of the population the unlabelled rows come from, around the "
+                "maximum-likelihood estimate; it carries the sampling error of both the labelled "
+                "and the unlabelled rows. The rules use that estimate shrunk toward the source "
+                f"prevalence ({pull}), so that a noisy estimate does not move every decision."
+                + (f" Here the shrunk value lies outside the interval: the data reject it at the "
+                   f"{level} level, and {c.n_unlabelled or 'the'} unlabelled rows are too few to "
+                   "outweigh the pull toward the labelled prevalence. Read the moved cutoff as "
+                   "cautious, not as an estimate of the new prevalence."
+                   if outside else "")
+                + "</p>"
+            )
         parts.append(notes_box(
             [n for n in c.notes if n.key in ("prevalence", "batches")], "notes-prevalence"))
         if "prevalence" in figures:

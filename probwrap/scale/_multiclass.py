@@ -28,6 +28,7 @@ import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 
 from ._dask import _frozen_multiclass
+from ._multiclass_wrappers import _Smallest
 from ._rows import rows_of
 
 __all__ = ["fit_multiclass_source", "estimate_multiclass_target"]
@@ -37,8 +38,6 @@ _TINY = np.finfo(float).tiny
 
 # -- blocks kept on the workers -----------------------------------------------------------------
 def _source_block(estimator, classes, Xb, yb, wb):
-    from ..calibration._logodds import proba_to_log_proba
-
     p = np.asarray(estimator.predict_proba(Xb), dtype=float)
     yb = np.asarray(yb).ravel()
     pos = np.clip(np.searchsorted(classes, yb), 0, classes.shape[0] - 1)
@@ -51,7 +50,8 @@ def _source_block(estimator, classes, Xb, yb, wb):
     w = np.ones(p.shape[0]) if wb is None else np.asarray(wb, dtype=float).ravel()
     if w.shape[0] != p.shape[0] or not np.all(np.isfinite(w)) or np.any(w < 0):
         raise ValueError("`sample_weight` must be finite, non-negative and one per row.")
-    return p, proba_to_log_proba(p), pos, w
+    # the log-probabilities are taken at the fit's floor (chosen from all blocks) in each pass
+    return p, None, pos, w
 
 
 def _target_block(estimator, calibrator, Xb, wb):
@@ -66,15 +66,22 @@ def _target_block(estimator, calibrator, Xb, wb):
 
 # -- source side ------------------------------------------------------------------------------
 def _counts(block, k):
-    _, _, y, w = block
+    """Class weights, sum of squared weights, rows of positive weight, and the smallest non-zero
+    probability of those rows (for the floor before logarithms, as in memory)."""
+    p, _, y, w = block
+    positive = p[w > 0]
+    positive = positive[positive > 0]
     return (np.bincount(y, weights=w, minlength=k), float(np.dot(w, w)),
-            float(np.count_nonzero(w)))
+            float(np.count_nonzero(w)),
+            _Smallest(float(positive.min()) if positive.size else np.inf))
 
 
-def _scaling_terms(block, theta, n_scale, k, total):
+def _scaling_terms(block, theta, n_scale, k, total, clip):
+    from ..calibration._logodds import proba_to_log_proba
     from ..shift._calibration import _hessian, _log_softmax
 
-    _, z, y, w = block
+    p, _, y, w = block
+    z = proba_to_log_proba(p, clip=clip)
     w = w / total
     a = np.broadcast_to(theta[:n_scale], (k,))
     b = np.concatenate([[0.0], theta[n_scale:]])
@@ -129,6 +136,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     Sets ``estimator_``, ``classes_`` (and feature attributes) on ``owner``; returns the
     estimator, whose ``n_resamples`` is 0 (no bootstrap for multiclass Dask input).
     """
+    from ..calibration._logodds import clip_from_smallest
     from ..shift import PriorEstimator
     from ..shift._calibration import (
         BiasCorrectedScaling,
@@ -137,21 +145,23 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
         identity_test,
         scale_penalty,
     )
+    from ..shift._estimate import check_class_names, name_classes
     from ..shift._shift_tests import _source_moments_from_sums
 
     estimator, classes = _frozen_multiclass(owner, y)
     k = classes.shape[0]
+    names = check_class_names(classes, k)
     parts = rows_of(X, y, sample_weight, estimator).persist(_source_block, estimator, classes)
     try:
-        class_weight, squared_weight, positive_rows = parts.reduce(_counts, k)
+        class_weight, squared_weight, positive_rows, smallest = parts.reduce(_counts, k)
         total = float(class_weight.sum())
         if total <= 0:
             raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
         if np.any(class_weight <= 0):
             raise ValueError(
-                f"`y` has no (positively weighted) rows of class index(es) "
-                f"{np.flatnonzero(class_weight <= 0).tolist()}; every class needs held-out rows "
-                "to estimate its prior."
+                f"`y` has no (positively weighted) rows of "
+                f"{name_classes(np.flatnonzero(class_weight <= 0), names)}; every class needs "
+                "held-out rows to estimate its prior."
             )
         est = PriorEstimator(
             owner.method, calibration=owner.calibration, tol=owner.em_tol,
@@ -171,12 +181,16 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             shrinkage = BiasCorrectedScaling(kind=kind).shrinkage
             n_rows = total if total >= positive_rows else total**2 / squared_weight
             lam = shrinkage / n_rows
+            # the floor before logarithms, as in memory (probwrap.shift._calibration
+            # .heldout_clip): half the smallest non-zero probability of the rows of positive
+            # weight, at least half the map's output floor for n_rows rows
+            clip = max(clip_from_smallest(smallest.value), 0.5 * _floor(n_rows, k))
 
             def terms(theta):
                 key = theta.tobytes()
                 if key not in cache:
                     cache.clear()
-                    cache[key] = parts.reduce(_scaling_terms, theta, n_scale, k, total)
+                    cache[key] = parts.reduce(_scaling_terms, theta, n_scale, k, total, clip)
                 return cache[key]
 
             def loss_grad(theta):
@@ -202,11 +216,13 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             cal.n_classes_ = k
             cal.converged_ = bool(converged)
             cal.floor_ = _floor(n_rows, k)
+            cal.clip_ = clip
         hard, soft = parts.reduce(_confusions, cal, k)
         su, suu, sw, sww = parts.reduce(_class_score_sums, cal, class_weight / total)
     finally:
         parts.release()  # release the persisted blocks on the workers
     est.n_classes_ = k
+    est.class_names_ = names
     est.calibrator_ = cal
     est.source_prior_ = class_weight / total
     est.confusion_ = hard / total

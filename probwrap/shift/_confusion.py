@@ -15,6 +15,8 @@ from ._estimate import (
     PriorNotIdentifiedWarning,
     _check_target,
     _warn_empty_columns,
+    check_class_names,
+    name_classes,
 )
 
 __all__ = [
@@ -151,6 +153,7 @@ def bbse_prior(
     soft: bool = False,
     sample_weight: Any = None,
     n_source: float | None = None,
+    class_names: Any = None,
 ) -> PriorEstimate:
     r"""Black-box shift estimation (BBSE; Lipton, Wang & Smola 2018).
 
@@ -179,6 +182,8 @@ def bbse_prior(
         rates within three standard errors) is reported as not identified: a
         :class:`PriorNotIdentifiedWarning`, the source prior, ``identified=False``. Without
         it only an exactly singular matrix is.
+    class_names : array-like of shape (k,), default=None
+        Labels of the columns, to name classes in warnings (default: by column index).
 
     Returns
     -------
@@ -196,6 +201,7 @@ def bbse_prior(
     p, w = _check_target(proba, sample_weight)
     k = p.shape[1]
     c = _check_confusion(confusion, k)
+    names = check_class_names(class_names, k)
     src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
     mu = _target_mean(p, w, soft)
     name = "bbse_soft" if soft else "bbse"
@@ -203,7 +209,7 @@ def bbse_prior(
     if not ok:
         _not_identified(f"BBSE ({name})", reason)
         return PriorEstimate(prior=src.copy(), method=name, n_rows=p.shape[0], identified=False)
-    _warn_empty_columns(mu, "predicted mass" if soft else "predictions")
+    _warn_empty_columns(mu, "predicted mass" if soft else "predictions", names)
     weights = _solve_or_lstsq(c, mu, "confusion matrix")
     prior = project_to_simplex(weights * src)
     return PriorEstimate(prior=prior, method=name, n_rows=p.shape[0])
@@ -241,6 +247,7 @@ def acc_prior(
     soft: bool = False,
     sample_weight: Any = None,
     n_source: float | None = None,
+    class_names: Any = None,
 ) -> PriorEstimate:
     r"""Adjusted classify-and-count (ACC) and its probabilistic form (PACC).
 
@@ -267,6 +274,8 @@ def acc_prior(
     n_source : float, default=None
         Effective number of labelled rows behind ``confusion``; see :func:`bbse_prior` for the
         identification check it enables.
+    class_names : array-like of shape (k,), default=None
+        Labels of the columns, to name classes in warnings (default: by column index).
 
     Returns
     -------
@@ -284,11 +293,14 @@ def acc_prior(
     p, w = _check_target(proba, sample_weight)
     k = p.shape[1]
     c = _check_confusion(confusion, k)
+    names = check_class_names(class_names, k)
     col = c.sum(axis=0)
     if np.any(col <= 0):
+        empty = np.flatnonzero(col <= 0)
+        which = "" if names is None else f" ({name_classes(empty, names)})"
         raise ValueError(
-            f"`confusion` has empty column(s) {np.flatnonzero(col <= 0).tolist()}: every class "
-            "must occur among the labelled rows."
+            f"`confusion` has empty column(s) {empty.tolist()}{which}: every class must occur "
+            "among the labelled rows."
         )
     m = c / col
     q = _target_mean(p, w, soft)
@@ -297,7 +309,7 @@ def acc_prior(
     if not ok:
         _not_identified(name.upper(), reason)
         return PriorEstimate(prior=col.copy(), method=name, n_rows=p.shape[0], identified=False)
-    _warn_empty_columns(q, "predicted mass" if soft else "predictions")
+    _warn_empty_columns(q, "predicted mass" if soft else "predictions", names)
     prior, n_iter, converged = _simplex_least_squares(m, q)
     return PriorEstimate(
         prior=prior, method="pacc" if soft else "acc", n_iter=n_iter, converged=converged,

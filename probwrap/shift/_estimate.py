@@ -58,6 +58,12 @@ class PriorEstimate:
         Bootstrap resamples dropped because a class vanished from the labelled resample.
     ml_prior : ndarray of shape (k,) or None
         The plain maximum-likelihood prior (EM methods), which the interval is built around.
+    ml_interval : ndarray of shape (k, 2) or None
+        EM methods: the interval of ``ml_prior`` as computed, before ``interval`` is widened
+        to contain the shrunk ``prior``. It is the confidence interval of the class shares;
+        the shrunk ``prior`` can lie outside it (few unlabelled rows against a pull of
+        ``prior_strength`` pseudo-rows toward the source prior), and then the data reject
+        the shrunk value at that level. None without an interval or for other methods.
     null_harm_scale : float or None
         Expected relative increase of the log loss, when nothing moved, per unit of
         ``E[w(T)^2 T]`` for a rule that applies the share ``w(T)`` of the estimate (see
@@ -77,6 +83,7 @@ class PriorEstimate:
     n_dropped: int = 0
     ml_prior: np.ndarray | None = None
     null_harm_scale: float | None = None
+    ml_interval: np.ndarray | None = None
 
 
 
@@ -120,11 +127,40 @@ def _check_target(proba: Any, sample_weight: Any, name: str = "proba") -> tuple[
     return p, w
 
 
-def _warn_empty_columns(mean: np.ndarray, what: str) -> None:
+def check_class_names(class_names: Any, k: int) -> tuple | None:
+    """``class_names`` (labels of the ``k`` columns, for messages) as a tuple, or None."""
+    if class_names is None:
+        return None
+    names = tuple(plain(v) for v in np.asarray(class_names, dtype=object).ravel())
+    if len(names) != k:
+        raise ValueError(
+            f"`class_names` must give one label per column ({k}); got {len(names)}."
+        )
+    return names
+
+
+def name_classes(index: Any, class_names: tuple | None) -> str:
+    """``class 'a'`` / ``classes 'a', 'b'`` by label, or ``class index 0`` / ``class index(es)
+    [0, 2]`` where the labels are unknown."""
+    idx = [int(j) for j in np.atleast_1d(index)]
+    if class_names is None:
+        return f"class index {idx[0]}" if len(idx) == 1 else f"class index(es) {idx}"
+    labels = ", ".join(repr(class_names[j]) for j in idx)
+    return f"class {labels}" if len(idx) == 1 else f"classes {labels}"
+
+
+def _empty_subject(empty: np.ndarray, class_names: tuple | None) -> str:
+    if class_names is None:
+        return f"Class index(es) {empty.tolist()}"
+    return "Class(es) " + ", ".join(repr(class_names[j]) for j in empty)
+
+
+def _warn_empty_columns(mean: np.ndarray, what: str, class_names: tuple | None = None) -> None:
     empty = np.flatnonzero(mean <= 0)
     if empty.size:
         warnings.warn(
-            f"Class index(es) {empty.tolist()} get zero {what} in the unlabelled data; their "
+            f"{_empty_subject(empty, class_names)} get zero {what} in the unlabelled data; "
+            "their "
             "estimated prior rests on very little information, so expect a wide interval.",
             UserWarning,
             stacklevel=3,

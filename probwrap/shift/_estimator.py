@@ -17,7 +17,14 @@ from .._validation import check_labels, check_proba, check_same_length, check_sa
 from ..calibration._logodds import proba_to_log_proba
 from ._calibration import BiasCorrectedScaling, heldout_clip
 from ._confusion import acc_prior, bbse_prior, heldout_confusion
-from ._estimate import BoundaryPriorWarning, PriorEstimate, _solve_prior, _warn_empty_columns
+from ._estimate import (
+    BoundaryPriorWarning,
+    PriorEstimate,
+    _solve_prior,
+    _warn_empty_columns,
+    check_class_names,
+    name_classes,
+)
 from ._interval import score_interval
 from ._resample import (  # noqa: F401  (_interval_from_draws: imported from here elsewhere)
     _interval_from_draws,
@@ -110,6 +117,9 @@ class PriorEstimator(_Resampling):
     n_classes_ : int
     n_source_effective_ : float
         Kish's effective number of labelled rows.
+    class_names_ : tuple or None
+        Labels of the classes given to ``fit`` (``class_names``), used to name classes in
+        warnings; None names them by column index.
 
     Examples
     --------
@@ -184,26 +194,31 @@ class PriorEstimator(_Resampling):
 
     # -- fitting -------------------------------------------------------------------------------
     def fit(
-        self, proba: Any, y: Any, sample_weight: Any = None, *, effective_rows: float | None = None
+        self, proba: Any, y: Any, sample_weight: Any = None, *, effective_rows: float | None = None,
+        class_names: Any = None,
     ) -> PriorEstimator:
         """Learn from held-out posteriors ``proba`` (n, k) and class indices ``y`` in 0..k-1.
 
         ``effective_rows`` overrides Kish's effective number of labelled rows (for rows that
-        are bins of a tally, whose weights are counts of many rows).
+        are bins of a tally, whose weights are counts of many rows). ``class_names`` (one label
+        per column, kept as ``class_names_``) names the classes in warnings and errors, which
+        otherwise name them by column index.
         """
         self._check_params()
         p = check_proba(proba, name="proba", ndim=2)
         k = p.shape[1]
+        names = check_class_names(class_names, k)
         check_same_length(("proba", p), ("y", y))
         y_idx, _ = check_labels(y, name="y", classes=np.arange(k), min_classes=1)
         w = check_sample_weight(sample_weight, p.shape[0])
         counts = np.bincount(y_idx, weights=w, minlength=k)
         if np.any(counts <= 0):
             raise ValueError(
-                f"`y` has no (positively weighted) rows of class index(es) "
-                f"{np.flatnonzero(counts <= 0).tolist()}; every class needs held-out rows to "
-                "estimate its prior."
+                f"`y` has no (positively weighted) rows of "
+                f"{name_classes(np.flatnonzero(counts <= 0), names)}; every class needs "
+                "held-out rows to estimate its prior."
             )
+        self.class_names_ = names
         self._src = (p.copy(), np.asarray(y_idx, dtype=int), w)
         self._src_rows = None  # rows behind each entry of _src (None: one row each)
         self._boot = None
@@ -260,6 +275,10 @@ class PriorEstimator(_Resampling):
                 f"{self.n_classes_} classes."
             )
         return p
+
+    def _names(self) -> tuple | None:
+        """Labels of the classes for messages (None: by column index)."""
+        return getattr(self, "class_names_", None)
 
     def _check_fitted(self) -> None:
         if not hasattr(self, "source_prior_"):
@@ -322,9 +341,10 @@ class PriorEstimator(_Resampling):
         if m in ("bbse", "bbse_soft"):
             s = m == "bbse_soft"
             return bbse_prior(p, soft if s else hard, src, soft=s, sample_weight=w,
-                              n_source=n_source)
+                              n_source=n_source, class_names=self._names())
         s = m == "pacc"
-        return acc_prior(p, soft if s else hard, soft=s, sample_weight=w, n_source=n_source)
+        return acc_prior(p, soft if s else hard, soft=s, sample_weight=w, n_source=n_source,
+                         class_names=self._names())
 
     def estimate(
         self,
@@ -357,9 +377,10 @@ class PriorEstimator(_Resampling):
         PriorEstimate
             ``prior`` is the point estimate (for ``method="em"`` the MAP estimate shrunk toward
             the source prior by ``prior_strength``; ``ml_prior`` the plain maximum-likelihood
-            one). ``interval`` is a bootstrap interval over Poisson resamples of both the
-            unlabelled and the labelled rows (BCa by default), built around the unpenalised
-            estimate and widened to contain ``prior``. ``shift_statistic`` and
+            one). ``interval`` is the score interval (two classes) or a bootstrap interval over
+            Poisson resamples of both the unlabelled and the labelled rows (BCa), built around
+            the unpenalised estimate and widened to contain ``prior``; ``ml_interval`` is the
+            same before that widening (the confidence interval of the class shares). ``shift_statistic`` and
             ``shift_pvalue`` come from the two-sample score test
             (:func:`shift_score_test`), whatever ``method``. ``n_dropped`` counts resamples
             dropped because a class vanished from the labelled resample (a
@@ -390,7 +411,7 @@ class PriorEstimator(_Resampling):
         point = self._point(p, wk, src, self.confusion_, self.soft_confusion_, n_source=n_src)
         ml = None
         if self.method == "em":
-            _warn_empty_columns(wk @ p, "predicted probability mass")
+            _warn_empty_columns(wk @ p, "predicted probability mass", self._names())
             ml = _solve_prior(p, wk, src, point.prior if np.all(point.prior > 0) else src,
                               float(self.tol), int(self.max_iter))[0]
             self._warn_boundary(ml, p, wk, n_eff)
@@ -400,7 +421,7 @@ class PriorEstimator(_Resampling):
                                     pooled=True)
         stat, pvalue = test.statistic, test.pvalue
         harm_scale = null_harm_scale(p, w, src, test.mean_cov)
-        bounds, dropped = None, 0
+        bounds, dropped, ml_bounds = None, 0, None
         if self.n_resamples > 0 and interval:
             source = self._source_rows()
             if not point.identified:
@@ -424,11 +445,15 @@ class PriorEstimator(_Resampling):
                     )
                 bounds = np.array([[1.0 - hi, 1.0 - lo], [lo, hi]])
                 centre = ml if ml is not None else point.prior
+                if ml is not None:
+                    ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
             else:
                 rs = self.random_state if random_state is None else random_state
                 centre = ml if ml is not None else point.prior
                 bounds, dropped = self._bootstrap(p_raw, w, centre, check_random_state(rs))
+                if ml is not None:
+                    ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
         return PriorEstimate(
             prior=point.prior,
@@ -444,6 +469,7 @@ class PriorEstimator(_Resampling):
             n_dropped=dropped,
             ml_prior=ml,
             null_harm_scale=harm_scale,
+            ml_interval=ml_bounds,
         )
 
     def _warn_boundary(self, ml: np.ndarray, p: np.ndarray, w: np.ndarray, n_eff: float) -> None:
@@ -473,12 +499,13 @@ class PriorEstimator(_Resampling):
             "the model separates the classes weakly" if worth < 0.25 else "there are few rows"
         )
         warnings.warn(
-            f"The maximum-likelihood share of class index {j} is at the edge "
+            f"The maximum-likelihood share of {name_classes(j, self._names())} is at the edge "
             f"({ml[j]:.4g}; source share {src[j]:.4g}): {why}. Each of the {n_eff:.4g} "
             f"effective unlabelled rows carries about {worth:.2g} of a labelled row's "
             f"information about this share, so the share is known only to about +-{1.96 * se:.2g}"
-            " (95 %). The reported prior is shrunk toward the source prior (prior_strength) and "
-            "the interval is wide; do not read the edge value as a finding.",
+            " (95 %). The reported prior is shrunk toward the source prior (prior_strength); do "
+            "not read the edge value as a finding (the interval says which shares the data "
+            "allow).",
             BoundaryPriorWarning,
             stacklevel=3,
         )
