@@ -237,7 +237,7 @@ def map_to_dict(
     >>> m = PlattMap().fit([-2.0, -1.0, 0.0, 1.0, 2.0, 3.0], [0, 0, 1, 0, 1, 1])
     >>> d = map_to_dict(m, score_scale="log-odds", note="demo")
     >>> d["method"], d["score_scale"], sorted(d["fitted"])
-    ('platt', 'log-odds', ['floor_', 'intercept_', 'slope_'])
+    ('platt', 'log-odds', ['floor_', 'intercept_', 'score_limits_', 'slope_'])
     >>> again = map_from_dict(json.loads(json.dumps(d)))
     >>> bool((again.predict([0.5, 4.0]) == m.predict([0.5, 4.0])).all())
     True
