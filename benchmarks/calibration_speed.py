@@ -114,21 +114,22 @@ def run(n: int, k: int, repeats: int) -> tuple[float, float, str, dict[str, list
             per_candidate.setdefault(name, []).append(time.process_time() - t)
             return out
 
-        from probwrap.calibration._base import CalibrationMap
-
-        original_fit = CalibrationMap.fit
+        original_fit = cw.CalibrationWrapper._fit_map
 
         def counted_fit(self, *args, **kwargs):
-            per_candidate["map fits"] = per_candidate.get("map fits", 0) + 1
-            return original_fit(self, *args, **kwargs)
+            # one-vs-rest fits return one binary map per class (fitted together)
+            out = original_fit(self, *args, **kwargs)
+            n_maps = len(out) if isinstance(out, list) else 1
+            per_candidate["map fits"] = per_candidate.get("map fits", 0) + n_maps
+            return out
 
         own = "_score_fold" in vars(cw.CalibrationWrapper)
         cw.CalibrationWrapper._score_fold = timed_fold
-        CalibrationMap.fit = counted_fit
+        cw.CalibrationWrapper._fit_map = counted_fit
         try:
             ours()
         finally:
-            CalibrationMap.fit = original_fit
+            cw.CalibrationWrapper._fit_map = original_fit
             if own:
                 cw.CalibrationWrapper._score_fold = original
             else:  # defined on a base class: remove the override

@@ -203,7 +203,11 @@ class _AutoChoice:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             try:
-                cal = self._fit_map(CALIBRATION_METHODS[name](), s_tr, y_tr, w_tr, ovr_tr)
+                # one-vs-rest Platt and beta fits and vector scaling start from the previous
+                # fold's parameters
+                cal = self._fit_map(
+                    CALIBRATION_METHODS[name](), s_tr, y_tr, w_tr, ovr_tr, state.get("last")
+                )
             except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
                 return f"failed in fold {f}: {exc}"
         for item in caught:
@@ -212,6 +216,7 @@ class _AutoChoice:
             text = str(item.message)
             if text not in state["seen"]:
                 state["seen"].append(text)
+        state["last"] = cal
         if state["boundary"] is None:
             hit = _boundary_of(cal)
             if hit is not None:

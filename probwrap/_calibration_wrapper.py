@@ -26,13 +26,13 @@ from .calibration._base import (
     count_weights,
     one_vs_rest_copy,
 )
-from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
 from .calibration._identity import IdentityMap
 from .calibration._isotonic import IsotonicMap
 from .calibration._logodds import DEFAULT_CLIP, clip_from_smallest
 from .calibration._one_vs_rest import fit_one_vs_rest, predict_one_vs_rest
 from .calibration._platt import PlattMap
+from .calibration._vector_scaling import VectorScalingMap
 from .calibration._venn_abers import VennAbersMap
 
 __all__ = ["CalibrationWrapper", "CALIBRATION_METHODS"]
@@ -438,7 +438,10 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         return np.maximum(scores, np.log(clip))
 
     # -- maps ----------------------------------------------------------------------------------
-    def _fit_map(self, template: CalibrationMap, scores, y_index, w, ovr=None):
+    def _fit_map(self, template: CalibrationMap, scores, y_index, w, ovr=None, start=None):
+        """Fit ``template`` (cloned) on held-out ``scores``: binary, multiclass, or one-vs-rest
+        (``ovr`` the one-vs-rest scores when already computed; ``start`` a one-vs-rest fit on
+        other rows to start the iterations from, see ``fit_one_vs_rest``)."""
         if (
             type(template) is PlattMap
             and self.response_ != "decision_function"
@@ -451,9 +454,13 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         if scores.ndim == 1:
             return clone(template).fit(self._map_input(template, scores), y_index, sample_weight=w)
         if template.supports_multiclass:
-            return clone(template).fit(
-                self._map_input(template, scores), np.asarray(y_index), sample_weight=w
-            )
+            m = clone(template)
+            if type(start) is type(m) and type(m) is VectorScalingMap:
+                m._start_from = start  # the fit starts from the previous fold's parameters
+            try:
+                return m.fit(self._map_input(template, scores), np.asarray(y_index), sample_weight=w)
+            finally:
+                m.__dict__.pop("_start_from", None)
         if ovr is None:
             ovr = self._one_vs_rest_scores(scores)
         n_classes = scores.shape[1]
@@ -464,7 +471,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         ks = np.flatnonzero(fitted)
         # the k binary maps together: inputs checked once, Platt and beta solved in one batch
         S = self._map_input(template, ovr, log_odds=True)
-        for k, m in zip(ks, fit_one_vs_rest(template, S, y_index, w, ks), strict=True):
+        for k, m in zip(ks, fit_one_vs_rest(template, S, y_index, w, ks, start), strict=True):
             maps[k] = m
         if not fitted.all():
             pooled = None
@@ -537,7 +544,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             ovr = self._one_vs_rest_scores(scores)
         kept = np.array([isinstance(m, IdentityMap) for m in calibrator])
         q = None
-        if isinstance(calibrator[0], (PlattMap, BetaMap)):  # every class's map in one pass
+        if not kept.any() and all(isinstance(m, CalibrationMap) for m in calibrator):
+            # one kind of map for every class: checked once (Platt and beta in one pass)
             q = predict_one_vs_rest(calibrator, self._map_input(calibrator[0], ovr, log_odds=True))
         if q is None:
             q = np.column_stack(

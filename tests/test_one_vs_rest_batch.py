@@ -165,7 +165,7 @@ def test_one_vs_rest_scores_are_bit_identical_to_one_class_at_a_time():
         assert np.array_equal(got, want)
 
 
-@pytest.mark.parametrize("template", TEMPLATES[:5], ids=repr)
+@pytest.mark.parametrize("template", TEMPLATES, ids=repr)
 def test_one_vs_rest_predictions_in_one_pass_are_bit_identical(template):
     from probwrap.calibration._one_vs_rest import predict_one_vs_rest
 
@@ -177,3 +177,46 @@ def test_one_vs_rest_predictions_in_one_pass_are_bit_identical(template):
     T = np.concatenate([rng.normal(size=(200, k)) * 10.0, np.full((2, k), 700.0), -S[:5]])
     want = np.column_stack([m.predict(T[:, j]) for j, m in enumerate(maps)])
     assert np.array_equal(predict_one_vs_rest(maps, T), want)
+
+
+def test_units_are_power_of_two_unit_per_column():
+    from probwrap._validation import power_of_two_unit
+    from probwrap.calibration._one_vs_rest import _powers_of_two_units
+
+    X = np.random.default_rng(5).normal(size=(4, 30, 2)) * np.array([1e-300, 3.0])
+    X[1, :, 0] = 0.0
+    X[2, 3, 1] = 1.5e308
+    want = [[power_of_two_unit(X[p, :, j]) for j in range(2)] for p in range(4)]
+    assert np.array_equal(_powers_of_two_units(X), np.array(want))
+
+
+@pytest.mark.parametrize("kind", ["random", "separable", "weighted"])
+def test_fits_started_from_another_folds_parameters_equal_cold_fits(kind):
+    """auto's cross-validation starts one-vs-rest Platt/beta fits and vector scaling from the
+    previous fold's parameters: the same minimum as a fit from the usual start."""
+    from probwrap.calibration import VectorScalingMap
+
+    rng = np.random.default_rng(len(kind))
+    n, k = 300, 4
+    S = rng.normal(size=(n, k)) * 2.0
+    y = np.array([rng.choice(k, p=np.exp(r) / np.exp(r).sum()) for r in S])
+    if kind == "separable":
+        S[np.arange(n), y] += 15.0
+    w = rng.integers(1, 4, size=n).astype(float) if kind == "weighted" else np.ones(n)
+    other = np.arange(n) % 5 != 0  # another fold: most of the same rows
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        for template in (PlattMap(), PlattMap(limit_scores=True), BetaMap()):
+            before = fit_one_vs_rest(template, S[other], y[other], w[other], range(k))
+            warm = fit_one_vs_rest(template, S, y, w, range(k), before)
+            for a, b in zip(warm, fit_one_vs_rest(template, S, y, w, range(k)), strict=True):
+                _same_map(a, b)
+        before = VectorScalingMap().fit(S[other], y[other], sample_weight=w[other])
+        warm = VectorScalingMap()
+        warm._start_from = before
+        warm.fit(S, y, sample_weight=w)
+        cold = VectorScalingMap().fit(S, y, sample_weight=w)
+    assert not hasattr(warm, "_start_from")
+    assert _close(warm.scales_, cold.scales_) and _close(warm.intercepts_, cold.intercepts_)
+    assert warm.boundary_ == cold.boundary_
+

@@ -28,7 +28,12 @@ __all__ = ["batched_weighted_logistic", "fit_one_vs_rest", "predict_one_vs_rest"
 
 
 def batched_weighted_logistic(
-    X: np.ndarray, T: np.ndarray, w: np.ndarray, *, max_iter: int = 200
+    X: np.ndarray,
+    T: np.ndarray,
+    w: np.ndarray,
+    *,
+    max_iter: int = 200,
+    start: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """``_weighted_logistic`` for ``P`` problems on the same rows and weights at once.
 
@@ -38,11 +43,17 @@ def batched_weighted_logistic(
     damped Newton steps with its own backtracking line search and stopping rule); a problem
     with a constant column, or a batch whose Newton system is singular, is solved one at a time
     by that function. Returns ``(coef (P, d), intercept (P,), converged (P,))``.
+
+    ``start = (coef (P, d), intercept (P,))`` starts the Newton iteration of each problem from
+    those parameters (NaN: from the intercept-only start) instead of the intercept-only fit,
+    e.g. from the same class's fit on another fold of mostly the same rows, which saves about
+    half of the iterations. Only for problems with a finite optimum (smoothed targets): the
+    iteration then converges to it to machine precision from any start.
     """
     P, n, d = X.shape
     wn = w / power_of_two_unit(w)
     wn = wn / wn.sum()
-    units = np.array([[power_of_two_unit(X[p, :, j]) for j in range(d)] for p in range(P)])
+    units = _powers_of_two_units(X)
     Xs = X / units[:, None, :]
     mu = wn @ Xs  # (P, d)
     sd = np.sqrt(wn @ (Xs - mu[:, None, :]) ** 2)
@@ -54,9 +65,24 @@ def batched_weighted_logistic(
     alone = ~keep.all(axis=1)
     batch = np.flatnonzero(~alone)
     if batch.size:
+        # the intercept-only start of _weighted_logistic, or the given start on the
+        # standardised scale (z = (x / unit - mu) / sd)
+        theta0 = np.zeros((batch.size, d + 1))
+        tbar = np.clip(T[batch] @ wn, 1e-12, 1.0 - 1e-12)
+        theta0[:, 0] = np.log(tbar) - np.log1p(-tbar)
+        if start is not None:
+            cold = theta0.copy()
+            c0, b0 = start[0][batch], start[1][batch]
+            given = np.isfinite(b0) & np.all(np.isfinite(c0), axis=1)
+            scaled = c0[given] * units[batch][given]
+            theta0[given, 1:] = scaled * sd[batch][given]
+            theta0[given, 0] = b0[given] + np.einsum("pd,pd->p", scaled, mu[batch][given])
+            bad = ~np.all(np.isfinite(theta0), axis=1)
+            theta0[bad] = cold[bad]  # (a start that overflows on this scale: not used)
         try:
             theta, ok = _batched_newton(
-                (Xs[batch] - mu[batch, None, :]) / sd[batch, None, :], T[batch], wn, max_iter
+                (Xs[batch] - mu[batch, None, :]) / sd[batch, None, :], T[batch], wn, max_iter,
+                theta0,
             )
         except np.linalg.LinAlgError:
             alone[:] = True  # one at a time: the singular problem raises as it would alone
@@ -71,93 +97,170 @@ def batched_weighted_logistic(
     return coef, intercept, converged
 
 
+def _powers_of_two_units(X: np.ndarray) -> np.ndarray:
+    """``power_of_two_unit(X[p, :, j])`` for every problem ``p`` and column ``j`` at once."""
+    top = np.abs(X).max(axis=1) if X.shape[1] else np.zeros(X.shape[::2])
+    usable = (top > 0.0) & np.isfinite(top)
+    exponent = np.frexp(np.where(usable, top, 1.0))[1]
+    return np.where(usable, np.ldexp(1.0, exponent - 1), 1.0)
+
+
 def _batched_newton(
-    Z: np.ndarray, T: np.ndarray, wn: np.ndarray, max_iter: int
+    Z: np.ndarray, T: np.ndarray, wn: np.ndarray, max_iter: int, theta0: np.ndarray
 ) -> tuple[np.ndarray, np.ndarray]:
     """Newton iterations of ``_weighted_logistic`` on standardised features ``Z`` (P, n, d),
-    for every problem at once; returns ``(theta (P, d + 1), converged (P,))``.
+    for every problem at once, from ``theta0`` (P, d + 1); returns ``(theta, converged (P,))``.
 
-    The same iteration as ``_weighted_logistic``: from the intercept-only start, Newton steps
-    with a backtracking line search (Armijo constant 1e-4, halving) until the Newton decrement
-    falls below 1e-10, then full steps until it falls below 1e-26 or the step below 1e-14 of
-    the parameters. Each problem keeps its own step length, count and stopping rule; a problem
-    that stops leaves the batch. The loss is computed only where a line search needs it.
+    The same iteration as ``_weighted_logistic``: Newton steps with a backtracking line search
+    (Armijo constant 1e-4, halving) until the Newton decrement falls below 1e-10, then full
+    steps until it falls below 1e-26 or the step below 1e-14 of the parameters. Each problem
+    keeps its own step length, count and stopping rule; a problem that stops leaves the batch.
+    The loss is computed only where a line search needs it.
     """
     P, n, d = Z.shape
     D = d + 1
-    # one row per parameter (intercept first), as in _weighted_logistic
     At = np.empty((P, D, n))
     At[:, 0, :] = 1.0
     At[:, 1:, :] = Z.transpose(0, 2, 1)
-    # products of the rows, one per entry of the (symmetric) Hessian: its entries are then one
-    # weighted sum over the rows per problem
+    # one row per parameter (intercept first), as in _weighted_logistic; the weights folded
+    # into the rows of the gradient and of the Hessian (whose entries are then one weighted
+    # sum over the rows per problem and entry of its upper triangle)
+    wAt = At * wn
     iu, ju = np.triu_indices(D)
-    G = At[:, iu, :] * At[:, ju, :]
-    theta = np.zeros((P, D))
-    tbar = np.clip(T @ wn, 1e-12, 1.0 - 1e-12)
-    theta[:, 0] = np.log(tbar) - np.log1p(-tbar)
-    ridge = 1e-13 * np.eye(D)
+    wG = wAt[:, iu, :] * At[:, ju, :]
+    pos = np.empty((D, D), dtype=np.intp)
+    pos[iu, ju] = np.arange(iu.size)
+    pos[ju, iu] = np.arange(iu.size)
+    pos = pos.ravel()
+    ridge = (1e-13 * np.eye(D)).ravel()
+    theta = theta0.copy()
 
     def point(rows, th):
-        """eta, 1 + exp(-|eta|), sigmoid(eta) and the gradient of problems ``rows`` at ``th``."""
-        A = At[rows]
+        full = rows is None
+        A = At if full else At[rows]
         eta = (th[:, None, :] @ A)[:, 0, :]
-        e = np.exp(-np.abs(eta))
-        one_e = 1.0 + e
-        p = np.where(eta >= 0.0, 1.0, e) / one_e
-        grad = (A @ (wn * (p - T[rows]))[:, :, None])[:, :, 0]
+        e = np.abs(eta)
+        np.negative(e, out=e)
+        np.exp(e, out=e)
+        one_e = e + 1.0
+        p = np.where(eta >= 0.0, 1.0, e)
+        p /= one_e
+        grad = ((wAt if full else wAt[rows]) @ (p - (T if full else T[rows]))[:, :, None])[:, :, 0]
         return eta, one_e, p, grad
 
     def loss(rows, eta, one_e):
-        return (np.log(one_e) + np.maximum(eta, 0.0) - T[rows] * eta) @ wn
+        v = np.log(one_e)
+        v += np.maximum(eta, 0.0)
+        v -= (T if rows is None else T[rows]) * eta
+        return v @ wn
 
-    all_rows = np.arange(P)
-    eta, one_e, p, grad = point(all_rows, theta)
-    f0 = np.full(P, np.nan)  # the loss at theta, computed when a line search needs it
+    eta, one_e, p, grad = point(None, theta)
+    f0 = np.full(P, np.nan)
     converged = np.zeros(P, dtype=bool)
-    active = all_rows
+    active = np.arange(P)
     for _ in range(max_iter):
-        if active.size == 0:
+        m = active.size
+        if m == 0:
             break
-        pa = p[active]
-        h = (G[active] @ (wn * pa * (1.0 - pa))[:, :, None])[:, :, 0]
-        hess = np.empty((active.size, D, D))
-        hess[:, iu, ju] = h
-        hess[:, ju, iu] = h
-        # a tiny ridge keeps the solve defined when the data are (nearly) separated
-        ga = grad[active]
-        step = np.linalg.solve(hess + ridge, ga[:, :, None])[:, :, 0]
-        decrement = np.einsum("pd,pd->p", ga, step)
+        full = m == P
+        pa = p if full else p[active]
+        c = 1.0 - pa
+        c *= pa
+        h = ((wG if full else wG[active]) @ c[:, :, None])[:, :, 0]
+        hess = h[:, pos]
+        hess += ridge  # a tiny ridge keeps the solve defined for (nearly) separated data
+        ga = grad if full else grad[active]
+        step = np.linalg.solve(hess.reshape(m, D, D), ga[:, :, None])[:, :, 0]
+        decrement = (ga * step).sum(axis=1)
         quad = decrement < 1e-10
-        done = np.zeros(active.size, dtype=bool)
+        if full:
+            # the common cases, with every problem in the same phase, in fewer operations
+            # (the same arithmetic as the general bookkeeping below)
+            if quad.all():
+                new = theta - step
+                stop = (decrement < 1e-20) | (
+                    np.abs(step).max(axis=1) < 1e-14 * (1.0 + np.abs(new).max(axis=1))
+                )
+                if stop.all():
+                    theta = new
+                    converged[:] = True
+                    active = active[:0]
+                    break
+                if not stop.any():
+                    theta = new
+                    eta, one_e, p, grad = point(None, theta)
+                    f0[:] = np.nan
+                    continue
+            elif not quad.any():
+                cand = theta - step  # the first step length of the line search, 1
+                c_eta, c_one_e, c_p, c_grad = point(None, cand)
+                big_u = np.abs(c_eta - eta).max(axis=1)
+                u = np.clip(big_u, 1e-8, 700.0)
+                if np.all(np.where(big_u > 1e-8, (np.expm1(u) - u) / (u * u), 0.5) <= 0.99):
+                    theta, f0[:] = cand, np.nan
+                    eta, one_e, p, grad = c_eta, c_one_e, c_p, c_grad
+                    continue
+        done = np.zeros(m, dtype=bool)
         if quad.any():
             # quadratic-convergence region: full Newton steps, no line search needed
             q = active[quad]
             sq = step[quad]
-            theta[q] = theta[q] - sq
-            stop = (decrement[quad] < 1e-26) | (
-                np.max(np.abs(sq), axis=1) < 1e-14 * (1.0 + np.max(np.abs(theta[q]), axis=1))
+            theta[q] -= sq
+            # (_weighted_logistic stops below a decrement of 1e-26; below 1e-20 the step
+            # just taken is below 1e-10 of the curvature's scale and, converging
+            # quadratically, leaves an error of the order of its square: the same parameters
+            # to rounding, one evaluation sooner)
+            stop = (decrement[quad] < 1e-20) | (
+                np.abs(sq).max(axis=1) < 1e-14 * (1.0 + np.abs(theta[q]).max(axis=1))
             )
             converged[q[stop]] = True
             done[np.flatnonzero(quad)[stop]] = True
             go = q[~stop]
-            if go.size:
+            if go.size == P:
+                eta, one_e, p, grad = point(None, theta)
+                f0[:] = np.nan
+            elif go.size:
                 eta[go], one_e[go], p[go], grad[go] = point(go, theta[go])
                 f0[go] = np.nan
         if not quad.all():
             # backtracking line search, each problem with its own step length
             ls = np.flatnonzero(~quad)
-            rows = active[ls]
-            stale = rows[np.isnan(f0[rows])]
-            if stale.size:
-                f0[stale] = loss(stale, eta[stale], one_e[stale])
             lam = np.ones(ls.size)
             while ls.size:
                 rows = active[ls]
+                sel = None if rows.size == P else rows
                 cand = theta[rows] - lam[:, None] * step[ls]
-                c_eta, c_one_e, c_p, c_grad = point(rows, cand)
-                f1 = loss(rows, c_eta, c_one_e)
-                accept = (f1 <= f0[rows] - 1e-4 * lam * decrement[ls]) | (lam < 1e-12)
+                c_eta, c_one_e, c_p, c_grad = point(sel, cand)
+                # The logistic loss is self-concordant (its third derivative is at most its
+                # second in size), so with u the change of a row's linear predictor,
+                # l(eta + u) <= l + l' u + l'' u^2 psi(|u|), psi(a) = (e^a - a - 1) / a^2, and
+                # a step of length lam along the Newton step lowers the loss by at least
+                # lam dec (1 - lam psi(max |u|)). Where that certainly passes the Armijo test
+                # (lam psi <= 0.99: a decrease of at least 0.01 lam dec, far above the loss's
+                # rounding as dec >= 1e-10) the step is accepted without computing the loss,
+                # as the test would accept it; elsewhere the test runs on computed losses.
+                big_u = np.abs(c_eta - eta[rows]).max(axis=1)
+                u = np.clip(big_u, 1e-8, 700.0)  # (psi(a) -> 1/2 as a -> 0; e^700 is finite)
+                psi = np.where(big_u > 1e-8, (np.expm1(u) - u) / (u * u), 0.5)
+                accept = lam * psi <= 0.99
+                f1 = np.full(rows.size, np.nan)  # the loss there, computed only if tested
+                test = np.flatnonzero(~accept)
+                if test.size:
+                    tr = rows[test]
+                    stale = tr[np.isnan(f0[tr])]
+                    if stale.size:
+                        f0[stale] = loss(stale, eta[stale], one_e[stale])
+                    f1[test] = loss(tr, c_eta[test], c_one_e[test])
+                    accept[test] = (f1[test] <= f0[tr] - 1e-4 * lam[test] * decrement[ls][test]) | (
+                        lam[test] < 1e-12
+                    )
+                if accept.all():
+                    theta[rows], f0[rows] = cand, f1
+                    if sel is None:  # every problem: the new arrays replace the old ones
+                        eta, one_e, p, grad = c_eta, c_one_e, c_p, c_grad
+                    else:
+                        eta[rows], one_e[rows], p[rows], grad[rows] = c_eta, c_one_e, c_p, c_grad
+                    break
                 acc = rows[accept]
                 theta[acc], f0[acc] = cand[accept], f1[accept]
                 eta[acc], one_e[acc], p[acc], grad[acc] = (
@@ -174,7 +277,12 @@ def _fits_batched(template: CalibrationMap) -> bool:
 
 
 def fit_one_vs_rest(
-    template: CalibrationMap, S: np.ndarray, y_index: np.ndarray, w: np.ndarray, classes: Any
+    template: CalibrationMap,
+    S: np.ndarray,
+    y_index: np.ndarray,
+    w: np.ndarray,
+    classes: Any,
+    start: list | None = None,
 ) -> list[CalibrationMap]:
     """The one-vs-rest maps of ``classes``: for each class ``k``,
     ``one_vs_rest_copy(template, S.shape[1]).fit(S[:, k], y_index == k, sample_weight=w)``.
@@ -184,12 +292,19 @@ def fit_one_vs_rest(
     it. The weights are checked once for all classes; Platt and beta maps are fitted by
     :func:`batched_weighted_logistic`. Maps with their own ``fit``, or scores that are not all
     finite (whose error the map's own checks report), are fitted one at a time.
+
+    ``start``: fitted one-vs-rest maps of the same kind, indexed by class (e.g. the fit on the
+    previous cross-validation fold): with smoothed targets (a finite optimum) each Platt or
+    beta fit starts its Newton iteration from that class's parameters, and reaches the same
+    optimum in fewer iterations.
     """
     n_classes = S.shape[1]
     classes = [int(k) for k in classes]
     y_index = np.asarray(y_index)
     labels = [(y_index == k).astype(int) for k in classes]
-    if type(template).fit is not CalibrationMap.fit or not np.all(np.isfinite(S[:, classes])):
+    if type(template).fit is not CalibrationMap.fit or not (
+        np.all(np.isfinite(S)) or np.all(np.isfinite(S[:, classes]))
+    ):
         return [
             one_vs_rest_copy(template, n_classes).fit(S[:, k], yk, sample_weight=w)
             for k, yk in zip(classes, labels, strict=True)
@@ -201,10 +316,17 @@ def fit_one_vs_rest(
         w, rescaled = count_weights(w)
     maps: list[CalibrationMap] = []
     ready: list[tuple[CalibrationMap, tuple]] = []
+    prior: list = []
+    # rows of positive weight in each class and outside it
+    weighted = w > 0
+    inside = np.bincount(y_index[weighted].astype(np.intp), minlength=n_classes)
+    outside = int(np.count_nonzero(weighted)) - inside
+    blank = one_vs_rest_copy(template, n_classes)  # copied per class (unfitted: parameters only)
     for k, yk in zip(classes, labels, strict=True):
-        m = one_vs_rest_copy(template, n_classes)
+        m = object.__new__(type(blank))
+        m.__dict__.update(blank.__dict__)
         y01 = yk.astype(float)
-        if not (np.any(w[yk == 1] > 0) and np.any(w[yk == 0] > 0)):
+        if not (inside[k] > 0 and outside[k] > 0):
             # a side without weight: the map's own fit raises the error it raises alone
             maps.append(m.fit(S[:, k], yk, sample_weight=w))
             continue
@@ -224,17 +346,30 @@ def fit_one_vs_rest(
         s = np.ascontiguousarray(S[:, k])
         if _fits_batched(m):
             ready.append((m, m._prepare(s, y01, w)))
+            before = start[k] if start is not None and k < len(start) else None
+            prior.append(before if type(before) is type(m) and m.smooth_targets else None)
         else:
             m._fit(s, y01, w)
         maps.append(m)
     if ready:
-        _solve_together(ready, w)
+        _solve_together(ready, w, prior)
     return maps
 
 
-def _solve_together(ready: list[tuple[CalibrationMap, tuple]], w: np.ndarray) -> None:
-    """Solve the prepared Platt or beta fits ``ready`` in one batch and store the results."""
+def _solve_together(ready: list[tuple[CalibrationMap, tuple]], w: np.ndarray, prior: list) -> None:
+    """Solve the prepared Platt or beta fits ``ready`` in one batch (each from the parameters
+    of its ``prior`` map, where not None) and store the results."""
     platt = isinstance(ready[0][0], PlattMap)
+    start = None
+    if any(m is not None for m in prior):
+        d = 1 if platt else 2
+        coef0 = np.full((len(ready), d), np.nan)
+        intercept0 = np.full(len(ready), np.nan)
+        for i, m in enumerate(prior):
+            if m is not None:
+                coef0[i] = [m.slope_] if platt else [m.a_, m.b_]
+                intercept0[i] = m.intercept_ if platt else m.c_
+        start = (coef0, intercept0)
     if platt:
         X = np.stack([x for _, (x, _t) in ready])[:, :, None]
         T = np.stack([t for _, (_x, t) in ready])
@@ -243,7 +378,7 @@ def _solve_together(ready: list[tuple[CalibrationMap, tuple]], w: np.ndarray) ->
         X = np.stack([x for _, (x, _t, _w) in ready])
         T = np.stack([t for _, (_x, t, _w) in ready])
         ww = ready[0][1][2]  # the weights scaled by BetaMap._prepare (the same for every class)
-    coef, intercept, converged = batched_weighted_logistic(X, T, ww)
+    coef, intercept, converged = batched_weighted_logistic(X, T, ww, start=start)
     for i, (m, prepared) in enumerate(ready):
         if platt:
             m._set_solution(coef[i], float(intercept[i]), bool(converged[i]))
@@ -253,8 +388,9 @@ def _solve_together(ready: list[tuple[CalibrationMap, tuple]], w: np.ndarray) ->
 
 
 def predict_one_vs_rest(maps: list, S: np.ndarray) -> np.ndarray | None:
-    """``np.column_stack([m.predict(S[:, j]) for j, m in enumerate(maps)])`` in one pass for a
-    list of fitted Platt maps or of fitted beta maps (not subclasses), else None.
+    """``np.column_stack([m.predict(S[:, j]) for j, m in enumerate(maps)])`` for a list of
+    fitted binary maps of one kind, in one pass for Platt and beta maps; None for maps with
+    their own ``predict`` (left to it).
 
     The same element-wise operations as each map's ``predict`` (score limit, linear predictor,
     logistic, output floor), applied to all columns at once, so the result is bit-identical.
@@ -262,10 +398,20 @@ def predict_one_vs_rest(maps: list, S: np.ndarray) -> np.ndarray | None:
     ``predict`` (None), which reports them.
     """
     kind = type(maps[0]) if maps else None
-    if kind not in (PlattMap, BetaMap) or any(type(m) is not kind for m in maps):
+    if kind is None or any(type(m) is not kind for m in maps):
         return None
     if S.shape[1] != len(maps) or not np.all(np.isfinite(S)):
         return None
+    if kind not in (PlattMap, BetaMap):
+        if kind.predict is not CalibrationMap.predict or kind.supports_multiclass:
+            return None
+        # CalibrationMap.predict of each binary map, without repeating its input checks
+        cols = []
+        for j, m in enumerate(maps):
+            floor = float(getattr(m, "floor_", 0.0))
+            cols.append(np.clip(np.asarray(m._predict(S[:, j]), dtype=float), floor, 1.0 - floor))
+        q = np.column_stack(cols)
+        return q if np.all(np.isfinite(q)) else None
     floor = np.array([float(getattr(m, "floor_", 0.0)) for m in maps])
     if kind is PlattMap:
         for m in maps:

@@ -111,9 +111,15 @@ class VectorScalingMap(CalibrationMap):
 
     def _fit(self, scores: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
         _check_settings(self)
+        # a fit of the same kind on other rows to start from (set by CalibrationWrapper's
+        # cross-validation of candidates, one fold to the next; see _fit_linear_softmax)
+        before = self.__dict__.pop("_start_from", None)
+        start = None
+        if type(before) is type(self) and hasattr(before, "scales_"):
+            start = (before.scales_, before.intercepts_)
         self.scales_, self.intercepts_, self.boundary_ = _fit_linear_softmax(
             _as_columns(scores), y.astype(np.intp), w, full=False, shrinkage=float(self.shrinkage),
-            smooth=bool(self.smooth_targets), name=type(self).__name__,
+            smooth=bool(self.smooth_targets), name=type(self).__name__, start=start,
         )
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
