@@ -21,6 +21,7 @@ from ._heldout import (
 from ._validation import plain
 from .calibration._base import (
     CalibrationMap,
+    FewClassRowsWarning,
     WeightScaleWarning,
     count_weights,
     one_vs_rest_copy,
@@ -38,6 +39,11 @@ __all__ = ["CalibrationWrapper", "CALIBRATION_METHODS"]
 
 #: Maps that use only the order of the scores: they get full-resolution scores.
 _ORDER_BASED = (IsotonicMap, BinningMap, VennAbersMap)
+
+#: A map the user named warns (FewClassRowsWarning) when a class has at least one but fewer
+#: held-out rows than this: the common-practice minimum count per cell (Cochran 1954), as for
+#: PriorShiftWrapper's labelled rows.
+FEW_CLASS_ROWS = 5
 
 #: One-vs-rest log-odds come from one logsumexp over all classes up to this many classes: the
 #: sums over the k - 1 other classes are then plain left-to-right sums whichever way NumPy runs
@@ -127,8 +133,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         full-resolution log-odds ``log p1 - log p0``, which keep the order of probabilities deep
         in the tails; exact zeros become the smallest positive float. Platt's map (named by
         ``method``, or an ``auto`` candidate) is fitted as ``PlattMap(limit_scores=True)``,
-        which further clips its input at half its own output floor (see
-        :class:`~probwrap.calibration.PlattMap`).
+        which further clips the scores that lie far beyond every calibration row of the other
+        class (see :class:`~probwrap.calibration.PlattMap`).
     tally_resolution : float, default=1e-3
         Dask input only: bin width on the log-odds scale of the score tallies that the
         predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
@@ -244,6 +250,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         if self.method == "auto":
             self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
         else:
+            self._warn_few_class_rows(ho.y_index, w)
             # a method the user named that cannot be fitted raises, naming the method
             try:
                 self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
@@ -274,6 +281,27 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
                     CALIBRATION_METHODS[fallback](), scores, ho.y_index, w
                 )
         return self
+
+    def _warn_few_class_rows(self, y_index: np.ndarray, w: np.ndarray) -> None:
+        """Warn, naming each class and its count, when a class has at least one but fewer than
+        ``FEW_CLASS_ROWS`` held-out rows of weight > 0 (rows, not weights: the scale of the
+        weights cannot change the warning). Absent classes have a warning of their own."""
+        counts = np.bincount(np.asarray(y_index, dtype=np.intp)[np.asarray(w) > 0],
+                             minlength=len(self.classes_))
+        few = np.flatnonzero((counts > 0) & (counts < FEW_CLASS_ROWS))
+        if few.size:
+            listed = ", ".join(
+                f"{plain(self.classes_[c])!r}: {int(counts[c])} row{'s' if counts[c] > 1 else ''}"
+                for c in few
+            )
+            warnings.warn(
+                f"CalibrationWrapper(method={plain(self.method_)!r}): class(es) with fewer than "
+                f"{FEW_CLASS_ROWS} held-out rows ({listed}); the map's part for them rests on "
+                "those rows and its regularisation, so their calibrated probabilities are "
+                "uncertain. Hold out more labelled rows of the class(es) named.",
+                FewClassRowsWarning,
+                stacklevel=3,
+            )
 
     def _count_scale_weights(self, w: np.ndarray) -> np.ndarray:
         """Weights as row counts for the maps (see ``docs/calibration.md``, "Weights")."""
@@ -419,8 +447,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             and self.response_ != "decision_function"
             and not isinstance(self.method, CalibrationMap)
         ):
-            # log-odds from probabilities: Platt's map clips them at half its output floor, so
-            # that rows at (or within 1e-12 of) 0 or 1 cannot flatten its slope (see PlattMap)
+            # log-odds from probabilities: Platt's map clips those far beyond every row of the
+            # other class, so that rows at (or within 1e-12 of) 0 or 1 cannot flatten its slope
+            # (see PlattMap)
             template = clone(template).set_params(limit_scores=True)
         if scores.ndim == 1:
             return clone(template).fit(self._map_input(template, scores), y_index, sample_weight=w)

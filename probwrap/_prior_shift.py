@@ -105,9 +105,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         at a small prevalence, whose rows say little about the prior while every prediction
         reacts to it, gets a high cutoff. None: ``c = min_evidence``.
     interval : {"score", "bca", "percentile"}, default="score"
-        How ``target_prior_interval_`` is built: the inverted two-sample score test (two
-        classes; no resampling), or a BCa / percentile bootstrap of ``n_resamples`` Poisson
-        resamples of both samples (see :class:`probwrap.shift.PriorEstimator`).
+        How ``target_prior_interval_`` is built: ``"score"`` — the inverted two-sample score
+        test (two classes), or for more classes with ``method="em"`` the delta method on the
+        EM fixed point with the labelled rows' error (calibration and source prior) stacked in
+        (no resampling either way) — or a BCa / percentile bootstrap of ``n_resamples``
+        Poisson resamples of both samples (see :class:`probwrap.shift.PriorEstimator`).
     cv : int, splitter or iterable, default=5
         Cross-fitting folds (ignored for a frozen estimator).
     n_jobs : int, default=None
@@ -128,7 +130,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         held-out probabilities instead of the rows (per class, bins of ``tally_resolution`` on
         the log-odds scale, at most 8,192 of them, with a Poisson bootstrap of the bin counts:
         exact up to the binning for unit weights). ``True`` keeps the rows at any size.
-        Multiclass fits always keep the rows.
+        Beyond 20,000 rows a fit with more classes, ``method="em"`` and ``interval="score"``
+        keeps only the labelled summary of its analytic interval (a small covariance matrix);
+        other multiclass fits keep the rows.
 
     Attributes
     ----------
@@ -330,10 +334,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self._source_tally = self.tally_ if ho.from_tally else None
         if (not ho.from_tally and not self.keep_heldout
                 and np.count_nonzero(ho.sample_weight) > SMALL_HELDOUT_ROWS):
-            # many rows: keep a tally of them for the intervals, not the rows (keep_heldout)
+            # many rows: keep a tally of them for the intervals, not the rows (keep_heldout);
+            # more classes with the analytic interval keep only its labelled summary
             from .scale._entry import check_resolution
 
             est._condense_source(check_resolution(self.tally_resolution), SUMMARY_BINS)
+            est._drop_source_for_analytic()
         return self._finish_fit(est)
 
     def _warn_few_class_rows(self, y_index: np.ndarray, w: np.ndarray) -> None:

@@ -584,8 +584,8 @@ def test_platt_on_naive_bayes_outputs_near_one_keeps_its_slope():
     # the classes, several positives within 1e-12 of 1 (log-odds near 27). Fitted on those raw
     # log-odds, Platt's slope fell to 0.19 against the smoothed targets and the test log loss
     # was 1.185x the base model's; scikit-learn's sigmoid (fitted on the probability itself) on
-    # the same rows is the outside reference. Limited to half the map's floor, Platt must do
-    # at least as well as it (measured 0.900x vs 0.938x base; 2 % margin for BLAS rounding).
+    # the same rows is the outside reference. With its scores limited (the positives lie far
+    # beyond every negative), Platt must do at least as well as it (measured 0.900x vs 0.938x base; 2 % margin for BLAS rounding).
     sm = pytest.importorskip("statsmodels.api")
     from sklearn.model_selection import KFold
     from sklearn.naive_bayes import GaussianNB
@@ -607,5 +607,57 @@ def test_platt_on_naive_bayes_outputs_near_one_keeps_its_slope():
     loss_ours = log_loss(y[test], ours.predict_proba(X[test]))
     loss_sk = log_loss(y[test], sk.predict_proba(X[test]))
     assert loss_ours <= 1.02 * loss_sk
-    assert ours.calibrator_.score_limit_ == pytest.approx(np.log(2 * 22 - 1))  # floor 1/22
+    # floor 1/22; the negatives all lie below 0, so the upper limit is logit(1 - floor / 2)
+    assert ours.calibrator_.score_limits_[1] == pytest.approx(np.log(2 * 22 - 1))
     assert ours.calibrator_.slope_ > 0.5
+
+
+def test_platt_score_limits_sit_beyond_the_other_class():
+    # consistency test of the rule (PlattMap docstring): the limit is L = logit(1 - floor / 2)
+    # beyond the last row of the class that does not reach as far, never inside +-L. Scores
+    # that all lie far below 0 (a model over-confident in one direction) are not clipped,
+    # so the fit equals the unlimited one exactly.
+    s = np.array([-10.6, -10.1, -9.8, -9.5, -8.9, -8.7, -7.9, -7.0, -6.6, -6.3, -4.9, -4.7,
+                  -9.2, -7.7, -3.9, -3.1, -2.4, -5.5, -6.1, -8.0])
+    y = np.r_[np.zeros(12), np.ones(8)].astype(int)
+    half = np.log(2 * 22 - 1)  # floor 1/(20 + 2)
+    m = PlattMap(limit_scores=True).fit(s, y)
+    # lowest positive -9.2: rows may reach L below it; highest negative -4.7 < +L
+    assert m.score_limits_ == pytest.approx((-9.2 - half, half))
+    plain_fit = PlattMap().fit(s, y)
+    assert (m.slope_, m.intercept_) == (plain_fit.slope_, plain_fit.intercept_)
+    # a positive far above every negative is clipped at L above the highest negative
+    s2 = np.r_[s, 30.0, 1.0]
+    y2 = np.r_[y, 1, 0]
+    m2 = PlattMap(limit_scores=True).fit(s2, y2)
+    assert m2.score_limits_[1] == pytest.approx(1.0 + np.log(2 * 24 - 1))
+    assert m2.predict([30.0]) == m2.predict([m2.score_limits_[1]])
+
+
+def test_platt_limit_keeps_the_order_of_one_sided_boosting_scores():
+    # scikit-learn's diabetes, progression above its 90 % quantile; histogram gradient boosting
+    # trained on 110 rows; 20 calibration rows (5 positives) whose log-odds all lie between
+    # -10.6 and -2.4. The limit of the previous round, +-logit(1 - floor / 2) = +-3.76 around 0,
+    # clipped 17 of the 20 rows to -3.76 and gave 1.33x scikit-learn's sigmoid (which fits the
+    # same smoothed-target logistic curve on the boosting model's decision_function, unclipped):
+    # the outside reference. Now nothing is clipped: equal within 1 % (measured equal to 1e-8;
+    # the margin covers BLAS rounding).
+    from sklearn.datasets import load_diabetes
+    from sklearn.ensemble import HistGradientBoostingClassifier
+    from sklearn.model_selection import KFold
+
+    X, t = load_diabetes(return_X_y=True)
+    y = (t > np.quantile(t, 0.9)).astype(int)
+    idx = np.random.default_rng(0).permutation(len(y))
+    fit, rest = idx[:110], idx[110:]
+    model = HistGradientBoostingClassifier(max_iter=100, random_state=0).fit(X[fit], y[fit])
+    cal = np.random.default_rng([0, 11]).choice(rest, 20, replace=False)
+    test = rest[~np.isin(rest, cal)][:800]
+    assert np.bincount(y[cal]).tolist() == [15, 5]
+    assert model.decision_function(X[cal]).max() < -2.0
+    frozen = FrozenEstimator(model)
+    ours = CalibrationWrapper(frozen, method="platt").fit(X[cal], y[cal])
+    sk = CalibratedClassifierCV(frozen, method="sigmoid", cv=KFold(2)).fit(X[cal], y[cal])
+    loss_ours = log_loss(y[test], ours.predict_proba(X[test]))
+    loss_sk = log_loss(y[test], sk.predict_proba(X[test]))
+    assert loss_ours <= 1.01 * loss_sk

@@ -287,13 +287,22 @@ def test_one_vs_rest_venn_abers_map_is_not_saved_alone():
 
 
 def test_platt_score_limit_survives_a_round_trip():
-    # consistency test: PlattMap(limit_scores=True) is restored from its setting and floor_ alone
+    # consistency test: PlattMap(limit_scores=True) is restored with its limits
     rng = np.random.default_rng(0)
     s = np.r_[rng.normal(-2.0, 1.0, 15), 27.0, 26.0, 25.0, rng.normal(3.0, 1.0, 4)]
     y = np.r_[np.zeros(15), np.ones(7)].astype(int)
     m = PlattMap(limit_scores=True).fit(s, y)
-    assert m.score_limit_ == pytest.approx(np.log(2 * 24 - 1))  # floor 1/(22 + 2)
-    r = map_from_dict(map_to_dict(m, score_scale="log-odds"))
+    half = np.log(2 * 24 - 1)  # floor 1/(22 + 2); every negative lies below 0, so +-half
+    assert m.score_limits_ == pytest.approx((-half, half))
+    d = map_to_dict(m, score_scale="log-odds")
+    assert d["fitted"]["score_limits_"] == pytest.approx([-half, half])
+    r = map_from_dict(d)
     t = np.linspace(-30.0, 30.0, 13)
     np.testing.assert_array_equal(r.predict(t), m.predict(t))
-    assert r.predict([27.0]) == m.predict([m.score_limit_])  # clipped at the limit
+    assert r.predict([27.0]) == m.predict([half])  # clipped at the limit
+    # a description written before the limits were saved: the symmetric limit of the floor
+    del d["fitted"]["score_limits_"]
+    np.testing.assert_array_equal(map_from_dict(d).predict(t), m.predict(t))
+    d["fitted"]["score_limits_"] = [1.0, -1.0]
+    with pytest.raises(ValueError, match="score_limits_.*low < high"):
+        map_from_dict(d)

@@ -1,6 +1,6 @@
 """Calibration maps (array core): fitted on held-out scores, they return probabilities."""
 
-from ._base import NONPARAMETRIC, CalibrationMap, WeightScaleWarning
+from ._base import NONPARAMETRIC, CalibrationMap, FewClassRowsWarning, WeightScaleWarning
 from ._beta import BetaMap
 from ._binning import BinningMap
 from ._identity import IdentityMap
@@ -18,6 +18,7 @@ __all__ = [
     "BinningMap",
     "CalibrationMap",
     "DEFAULT_CLIP",
+    "FewClassRowsWarning",
     "IdentityMap",
     "IsotonicMap",
     "MAP_SCORE_SCALES",

@@ -18,7 +18,13 @@ from .._validation import (
     plain,
 )
 
-__all__ = ["CalibrationMap", "NONPARAMETRIC", "WeightScaleWarning", "one_vs_rest_copy"]
+__all__ = [
+    "CalibrationMap",
+    "FewClassRowsWarning",
+    "NONPARAMETRIC",
+    "WeightScaleWarning",
+    "one_vs_rest_copy",
+]
 
 #: ``complexity`` of maps whose number of free parameters grows with the data.
 NONPARAMETRIC = 1e9
@@ -31,6 +37,19 @@ class WeightScaleWarning(UserWarning):
     number of rows, a Venn-Abers test point of weight one) when ``sample_weight`` cannot be row
     frequencies because it sums to less than the number of rows it weights. The weights are
     then rescaled to sum to Kish's effective sample size (see :func:`count_weights`).
+    """
+
+
+class FewClassRowsWarning(UserWarning):
+    """A class has only a handful of calibration rows for a map the user named.
+
+    Raised by :class:`~probwrap.CalibrationWrapper` when a class has at least one but fewer
+    than five held-out rows of weight > 0 (rows, not weights, so the scale of the weights
+    cannot change it; five is the common-practice minimum count per cell of Cochran 1954, the
+    same threshold as :class:`~probwrap.PriorShiftWrapper`'s warning about few labelled rows).
+    The map's part for that class then rests on those rows and its regularisation. ``method=
+    "auto"`` instead leaves the order-based maps out below 8 rows and, below 2, uses the most
+    regularised map, with a warning of its own.
     """
 
 

@@ -419,13 +419,13 @@ def predict_one_vs_rest(maps: list, S: np.ndarray) -> np.ndarray | None:
     floor = np.array([float(getattr(m, "floor_", 0.0)) for m in maps])
     if kind is PlattMap:
         for m in maps:
-            m._limited(S[:0, 0])  # sets score_limit_ where a restored map has none yet
-        limits = [m.score_limit_ for m in maps]
+            m._limited(S[:0, 0])  # sets score_limits_ where a restored map has none yet
+        limits = [m.score_limits_ for m in maps]
         if any(lim is not None for lim in limits):
             if not all(lim is not None for lim in limits):
                 return None
-            bound = np.array(limits, dtype=float)
-            S = np.clip(S, -bound, bound)
+            bound = np.array(limits, dtype=float)  # (k, 2): each map's (low, high)
+            S = np.clip(S, bound[:, 0], bound[:, 1])
         slope = np.array([m.slope_ for m in maps])
         intercept = np.array([m.intercept_ for m in maps])
         with np.errstate(over="ignore"):

@@ -111,6 +111,20 @@ def _separated(s: np.ndarray, y: np.ndarray, w: np.ndarray) -> bool:
     return bool(up or down)
 
 
+def _score_limits(s: np.ndarray, y: np.ndarray, w: np.ndarray, floor: float) -> tuple[float, float]:
+    """``(low, high)`` of ``PlattMap(limit_scores=True)``: ``L = logit(1 - floor / 2)`` beyond
+    the last row of the class that does not reach as far (see :class:`PlattMap`), at least
+    ``±L``; ``±L`` when a class has no rows of positive weight."""
+    half = float(np.log(2.0 / floor - 1.0))
+    pos = s[(y == 1) & (w > 0)]
+    neg = s[(y == 0) & (w > 0)]
+    if pos.size == 0 or neg.size == 0:
+        return -half, half
+    top = float(min(pos.max(), neg.max()))
+    bottom = float(max(pos.min(), neg.min()))
+    return min(-half, bottom - half), max(half, top + half)
+
+
 def smoothed_binary_targets(y: np.ndarray, w: np.ndarray, rest_classes: int = 1) -> np.ndarray:
     """Platt's (1999) targets: ``(N+ + 1) / (N+ + 2)`` for positives, ``1 / (N- + 2)`` else.
 
@@ -137,13 +151,18 @@ class PlattMap(CalibrationMap):
         Use Platt's smoothed targets instead of the raw 0/1 labels (and floor the output);
         ``False`` gives the plain maximum-likelihood fit.
     limit_scores : bool, default=False
-        Clip the scores to ``±score_limit_`` in ``fit`` and ``predict``, where
-        ``score_limit_ = logit(1 - floor_ / 2)``: half the output floor, as a log-odds. Meant
+        Clip the scores to ``score_limits_ = (low, high)`` in ``fit`` and ``predict``. Meant
         for log-odds converted from a model's probabilities (``CalibrationWrapper`` sets it for
-        them): the map never outputs a probability beyond ``floor_``, and inputs far beyond
-        what it can output (naive Bayes probabilities within 1e-12 of 0 or 1, log-odds near
-        ±27) would otherwise dominate the fit and, against the smoothed targets, flatten the
-        slope for every other row. Has no effect without ``smooth_targets`` (no floor).
+        them): inputs far beyond what the map can output (naive Bayes probabilities within
+        1e-12 of 0 or 1, log-odds near ±27) would otherwise dominate the fit and, against the
+        smoothed targets, flatten the slope for every other row. The limit on each side is
+        ``L = logit(1 - floor_ / 2)`` (half the output floor, as a log-odds) beyond the last
+        calibration row of the class that does not reach that far: ``high = max(L, u + L)``
+        with ``u`` the smaller of the two classes' largest scores, and ``low = min(-L, d - L)``
+        with ``d`` the larger of their smallest scores. Beyond ``u`` the rows are all of one
+        class and say nothing more about the slope, so only scores more than ``L`` beyond
+        every row of the other class are clipped; the limit is never inside ``±L``. Has no
+        effect without ``smooth_targets`` (no floor).
 
     Attributes
     ----------
@@ -153,8 +172,9 @@ class PlattMap(CalibrationMap):
         Constant term.
     floor_ : float
         Smallest output (0 without smoothing).
-    score_limit_ : float or None
-        The clip of the scores (``limit_scores=True`` with smoothed targets), else None.
+    score_limits_ : tuple of float or None
+        ``(low, high)``, the clip of the scores (``limit_scores=True`` with smoothed targets),
+        else None.
     boundary_ : str or None
         Set when raw 0/1 targets meet scores that separate the classes (no finite fit).
     classes_ : ndarray of shape (2,)
@@ -212,10 +232,12 @@ class PlattMap(CalibrationMap):
             )
         if not isinstance(self.limit_scores, (bool, np.bool_)):
             raise ValueError(f"`limit_scores` must be True or False; got {plain(self.limit_scores)!r}.")
-        self.score_limit_ = None
+        self.score_limits_ = None
         if self.smooth_targets:
             t = smoothed_binary_targets(y, w, self._rest_classes)
             self._set_floor(w, 2)
+            if self.limit_scores:
+                self.score_limits_ = _score_limits(scores, y, w, self.floor_)
             scores = self._limited(scores)
         else:
             t = y
@@ -245,16 +267,15 @@ class PlattMap(CalibrationMap):
         return bool(self.smooth_targets)
 
     def _limited(self, scores: np.ndarray) -> np.ndarray:
-        """The scores clipped to ``±score_limit_`` (set here from ``floor_`` when fitting)."""
-        if not hasattr(self, "score_limit_") or (self.limit_scores and self.score_limit_ is None):
-            # fitting, or a map restored from a saved description (floor_ and the setting only)
-            floor = float(getattr(self, "floor_", 0.0))
-            self.score_limit_ = (
-                float(np.log(2.0 / floor - 1.0)) if self.limit_scores and floor > 0.0 else None
-            )
-        if self.score_limit_ is None:
+        """The scores clipped to ``score_limits_`` (when set)."""
+        limits = getattr(self, "score_limits_", None)
+        if limits is None and self.limit_scores and getattr(self, "floor_", 0.0) > 0.0:
+            # a map saved before the limits were stored: the symmetric limit of its floor
+            half = float(np.log(2.0 / self.floor_ - 1.0))
+            limits = self.score_limits_ = (-half, half)
+        if limits is None:
             return scores
-        return np.clip(scores, -self.score_limit_, self.score_limit_)
+        return np.clip(scores, limits[0], limits[1])
 
     def _predict(self, scores: np.ndarray) -> np.ndarray:
         scores = self._limited(scores)

@@ -84,7 +84,9 @@ MAP_SCORE_SCALES = ("proba", "log-odds")
 #: method name -> (map class, constructor settings, fitted attributes with their kind).
 #: Kinds: "float" (a finite number), "int", "array" (a 1-d list of finite numbers), "matrix"
 #: (a 2-d list of lists of finite numbers), "floor" (the output floor of a regularised map: a
-#: number in [0, 0.5); 0 when absent, as written before maps had floors).
+#: number in [0, 0.5); 0 when absent, as written before maps had floors), "limits" (a pair
+#: [low, high] of finite numbers with low < high, or null; when absent, as written before
+#: Platt's limits were two-sided, the map recomputes the symmetric limit of its floor).
 _SPECS: dict[str, tuple[type[CalibrationMap], tuple[str, ...], dict[str, str]]] = {
     "temperature": (
         TemperatureMap,
@@ -94,7 +96,7 @@ _SPECS: dict[str, tuple[type[CalibrationMap], tuple[str, ...], dict[str, str]]] 
     "platt": (
         PlattMap,
         ("smooth_targets", "limit_scores"),
-        {"slope_": "float", "intercept_": "float", "floor_": "floor"},
+        {"slope_": "float", "intercept_": "float", "floor_": "floor", "score_limits_": "limits"},
     ),
     "beta": (
         BetaMap,
@@ -170,6 +172,16 @@ def _plain(value: Any, where: str) -> Any:
     raise ValueError(f"{where} has a value of type {type(value).__name__} that cannot be saved.")
 
 
+def _limits(value: Any, where: str) -> tuple[float, float] | None:
+    """A saved ``[low, high]`` pair (or null) as a tuple of floats (or None)."""
+    if value is None:
+        return None
+    pair = _numbers(value, where)
+    if pair.shape != (2,) or not pair[0] < pair[1]:
+        raise ValueError(f"field '{where}' must be null or a pair [low, high] with low < high; got {_short(value)}.")
+    return float(pair[0]), float(pair[1])
+
+
 def _classes_kind(classes: np.ndarray) -> str:
     kind = classes.dtype.kind
     if kind == "b":
@@ -225,7 +237,7 @@ def map_to_dict(
     >>> m = PlattMap().fit([-2.0, -1.0, 0.0, 1.0, 2.0, 3.0], [0, 0, 1, 0, 1, 1])
     >>> d = map_to_dict(m, score_scale="log-odds", note="demo")
     >>> d["method"], d["score_scale"], sorted(d["fitted"])
-    ('platt', 'log-odds', ['floor_', 'intercept_', 'slope_'])
+    ('platt', 'log-odds', ['floor_', 'intercept_', 'score_limits_', 'slope_'])
     >>> again = map_from_dict(json.loads(json.dumps(d)))
     >>> bool((again.predict([0.5, 4.0]) == m.predict([0.5, 4.0])).all())
     True
@@ -252,8 +264,12 @@ def map_to_dict(
 
     fitted: dict[str, Any] = {}
     for attr, kind in fitted_kinds.items():
-        value = getattr(cal_map, attr, 0.0) if kind == "floor" else getattr(cal_map, attr)
-        if kind == "array":
+        value = getattr(cal_map, attr, 0.0) if kind == "floor" else getattr(cal_map, attr, None)
+        if kind == "limits":
+            fitted[attr] = None if value is None else [
+                _plain(float(v), f"`{attr}` of the map") for v in value
+            ]
+        elif kind == "array":
             arr = np.asarray(value, dtype=float)
             if arr.ndim != 1 or not np.all(np.isfinite(arr)):
                 raise ValueError(f"`{attr}` of the map must be a 1-d array of finite numbers.")
@@ -427,6 +443,10 @@ def map_from_dict(
     for attr, kind in fitted_kinds.items():
         if kind == "floor" and attr not in fitted:
             setattr(cal_map, attr, 0.0)
+            continue
+        if kind == "limits":
+            if attr in fitted:
+                setattr(cal_map, attr, _limits(fitted[attr], f"fitted.{attr}"))
             continue
         value = _need(fitted, attr, "fitted.")
         if kind == "array":

@@ -15,6 +15,7 @@ from sklearn.utils import check_random_state
 
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ..calibration._logodds import proba_to_log_proba
+from ._analytic import analytic_prior_interval, labelled_parameter_cov
 from ._calibration import BiasCorrectedScaling, heldout_clip
 from ._confusion import acc_prior, bbse_prior, heldout_confusion
 from ._estimate import (
@@ -101,7 +102,11 @@ class PriorEstimator(_Resampling):
     interval : {"score", "bca", "percentile"}, default="score"
         ``"score"``: for two classes, the inverted two-sample score test
         (:func:`score_interval`; no resampling, both samples' error included, honest at the
-        edges); for more classes it falls back to ``"bca"``. ``"bca"``: bias-corrected and
+        edges); for more classes with ``method="em"`` the Wald interval of the delta method on
+        the EM fixed point, whose variance stacks the unlabelled rows' score with the labelled
+        rows' estimating equations of the calibration and the source prior (the M-estimator
+        sandwich; no resampling); other multiclass methods fall back to ``"bca"``. ``"bca"``:
+        bias-corrected and
         accelerated bootstrap interval (Efron 1987; acceleration from a grouped jackknife over
         both samples) over ``n_resamples`` Poisson resamples of both samples.
         ``"percentile"``: the plain percentile bootstrap interval.
@@ -233,6 +238,12 @@ class PriorEstimator(_Resampling):
             _score_rows(self.calibrate(p), self.source_prior_), w, None,
             self.source_prior_, effective_rows,
         )
+        # the labelled rows' share of the analytic interval (more than two classes): the
+        # sandwich covariance of the calibration and the source prior, a small matrix
+        self._labelled_cov = (
+            labelled_parameter_cov(self.calibrator_, p, y_idx, w, self.source_prior_,
+                                   self.n_source_effective_) if k > 2 else None
+        )
         return self
 
     def _summarise(
@@ -275,6 +286,18 @@ class PriorEstimator(_Resampling):
                 f"{self.n_classes_} classes."
             )
         return p
+
+    def _eta_cov(self) -> np.ndarray | None:
+        """The labelled summary of the analytic interval (computed from the kept rows for an
+        estimator fitted before it was stored; None for two classes or without rows)."""
+        cov = getattr(self, "_labelled_cov", None)
+        if cov is None and self.n_classes_ > 2:
+            src = self._source_rows()
+            if src is not None and self._source_row_counts() is None:
+                cov = labelled_parameter_cov(self.calibrator_, src[0], src[1], src[2],
+                                             self.source_prior_, self.n_source_effective_)
+                self._labelled_cov = cov
+        return cov
 
     def _names(self) -> tuple | None:
         """Labels of the classes for messages (None: by column index)."""
@@ -448,9 +471,28 @@ class PriorEstimator(_Resampling):
                 if ml is not None:
                     ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
+            elif getattr(self, "interval", "score") == "score" and ml is not None and (
+                    self._eta_cov() is not None):
+                # more than two classes: the delta method on the EM fixed point, with the
+                # labelled rows' error through the calibration and the source prior
+                bounds = analytic_prior_interval(
+                    self.calibrator_, p_raw, w, n_eff, src, ml, self._eta_cov(),
+                    self.confidence_level,
+                )[0]
+                ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
+                bounds = _widen(bounds, point.prior, ml, n_eff, self.confidence_level)
             else:
                 rs = self.random_state if random_state is None else random_state
                 centre = ml if ml is not None else point.prior
+                if source is None and bool(self.resample_source):
+                    warnings.warn(
+                        "The labelled rows were not kept (more than 20,000 of them and "
+                        "keep_heldout=False), so this bootstrap interval redraws the unlabelled "
+                        "rows only and leaves out the labelled rows' error; fit with "
+                        "keep_heldout=True for it, or use interval='score'.",
+                        UserWarning,
+                        stacklevel=2,
+                    )
                 bounds, dropped = self._bootstrap(p_raw, w, centre, check_random_state(rs))
                 if ml is not None:
                     ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)

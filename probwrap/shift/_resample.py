@@ -85,6 +85,18 @@ class _Resampling:
         self._src_rows = total * total / square
         self._boot = None
 
+    def _drop_source_for_analytic(self) -> None:
+        """Drop the kept labelled rows of a fit with more than two classes whose interval is
+        the analytic one (``method="em"``, ``interval="score"``): it reads only the labelled
+        summary ``_labelled_cov``, so the fitted estimator no longer grows with the rows. A
+        bootstrap interval asked for later redraws the unlabelled rows only (and says so)."""
+        if (self.n_classes_ > 2 and self.method == "em"
+                and getattr(self, "interval", "score") == "score"
+                and getattr(self, "_labelled_cov", None) is not None):
+            self._src = None
+            self._src_rows = None
+            self._boot = None
+
     # -- the pieces the bootstrap re-uses ------------------------------------------------------
     def _bootstrap_parts(self) -> dict:
         """Per-row gradients and Hessians of the calibration loss at the fitted parameters.

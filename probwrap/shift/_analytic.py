@@ -1,0 +1,165 @@
+"""Analytic (delta-method) interval of the EM prior that carries the labelled rows' error.
+
+The maximum-likelihood prior :math:`\\hat\\pi` of the unlabelled rows solves the score equations
+of Saerens, Latinne & Decaestecker (2002), one per free class share :math:`c = 1..k-1`,
+
+.. math:: \\bar\\psi_t(\\pi; \\eta) = \\frac1{n_t}\\sum_j \\frac{r_c(x_j) - r_0(x_j)}
+          {\\sum_l \\pi_l r_l(x_j)} = 0, \\qquad r_l(x) = p_l(x; \\theta) / \\pi^s_l ,
+
+where the calibrated posteriors :math:`p(x; \\theta)` and the source prior :math:`\\pi^s` —
+together :math:`\\eta` — were themselves estimated from the labelled rows, by their own
+estimating equations (the calibration's score, and the class indicators minus their shares).
+Stacking the two sets of equations over two independent samples (the M-estimator sandwich of
+Stefanski & Boos 2002, "The calculus of M-estimation" — its stacked form written from memory —
+with the nuisance parameters' equations from the second sample) gives, to first order,
+
+.. math:: \\hat\\pi - \\pi \\approx -A^{-1}\\bigl(\\bar\\psi_t + D(\\hat\\eta - \\eta)\\bigr),
+          \\qquad \\operatorname{Var}\\hat\\pi = A^{-1}\\Bigl(\\frac{V_t}{n_t} +
+          D\\,\\Sigma_\\eta D^\\top\\Bigr)A^{-\\top},
+
+with :math:`A = \\partial\\bar\\psi_t/\\partial\\pi` (minus the observed information),
+:math:`D = \\partial\\bar\\psi_t/\\partial\\eta`, :math:`V_t` the covariance of the per-row scores,
+and :math:`\\Sigma_\\eta` the sandwich covariance of :math:`\\hat\\eta` from the labelled rows —
+the only thing the labelled rows contribute, so a fitted estimator keeps that small matrix
+instead of the rows. The interval of each class share is the Wald interval
+:math:`\\hat\\pi_c \\pm z\\,\\mathrm{se}_c` within [0, 1] (the caller widens it to at least the
+Clopper-Pearson interval on the unlabelled rows, as every interval here).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.stats import norm
+
+from ._calibration import _log_softmax, scale_penalty
+
+__all__: list[str] = []
+
+
+def _logit_jacobian(z: np.ndarray, n_scale: int) -> np.ndarray:
+    """d logits / d theta per row, shape (n, k, n_scale + k - 1) (theta: scales, biases 1..)."""
+    n, k = z.shape
+    jac = np.zeros((n, k, n_scale + k - 1))
+    if n_scale == 1:
+        jac[:, :, 0] = z
+    else:
+        jac[:, np.arange(k), np.arange(k)] = z
+    jac[:, np.arange(1, k), n_scale + np.arange(k - 1)] = 1.0
+    return jac
+
+
+def _calibrated(cal, proba: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+    """Calibrated posteriors (without the output floor, which the derivatives ignore) and the
+    d p / d theta Jacobian of shape (n, k, m), or (proba, None) without a calibration."""
+    if cal is None:
+        return proba, None
+    z = cal.log_scores(proba)
+    k = z.shape[1]
+    n_scale = 1 if cal.kind == "temperature" else k
+    p = np.exp(_log_softmax(z * cal.scale_ + cal.bias_, axis=1))
+    jac = _logit_jacobian(z, n_scale)
+    # d p_l / d logit_m = p_l (delta_lm - p_m)
+    curv = p[:, :, None] * np.eye(k)[None] - p[:, :, None] * p[:, None, :]
+    return p, np.einsum("nlm,nmq->nlq", curv, jac, optimize=True)
+
+
+def labelled_parameter_cov(
+    cal, proba: np.ndarray, y: np.ndarray, w: np.ndarray, source_prior: np.ndarray,
+    n_eff: float,
+) -> np.ndarray:
+    """Sandwich covariance of the labelled rows' estimates ``eta = (theta, pi^s_1..k-1)``.
+
+    ``theta`` (the calibration's scales and biases, when there is a calibration) solves the
+    penalised weighted score equations ``sum w~ g_i + penalty'(theta) = 0`` (``w~`` the weights
+    summing to one), so ``theta^ - theta ~ -H^-1 sum w~ g_i`` with ``H`` the Hessian of the
+    fitted objective; the source shares are ``sum w~ e_i`` with ``e_i`` the class indicators
+    minus the shares. The covariance of the stacked per-row influence ``(-H^-1 g_i, e_i)`` over
+    ``n_eff`` rows (Kish's effective size, as the shift test counts the labelled rows).
+    """
+    k = proba.shape[1]
+    wn = w / w.sum()
+    onehot = np.eye(k)[y]
+    parts = [onehot[:, 1:] - source_prior[1:]]
+    if cal is not None:
+        z = cal.log_scores(proba)
+        n_scale = 1 if cal.kind == "temperature" else k
+        p = np.exp(_log_softmax(z * cal.scale_ + cal.bias_, axis=1))
+        jac = _logit_jacobian(z, n_scale)
+        grad = np.einsum("nkq,nk->nq", jac, p - onehot)
+        curv = p[:, :, None] * np.eye(k)[None] - p[:, :, None] * p[:, None, :]
+        hess = np.einsum("n,nkq,nkl,nlr->qr", wn, jac, curv, jac, optimize=True)
+        theta = np.concatenate([cal.scale_[:n_scale], cal.bias_[1:]])
+        from ..calibration._base import count_weights
+
+        with np.errstate(over="ignore"):
+            n_rows = float(count_weights(w)[0].sum())
+        lam = float(cal.shrinkage) / n_rows if 0.0 < n_rows < np.inf else 0.0
+        hess = hess + scale_penalty(theta, n_scale, lam)[2]
+        parts.insert(0, -np.linalg.solve(hess, grad.T).T)
+    infl = np.hstack(parts)
+    infl = infl - wn @ infl
+    return (infl * wn[:, None]).T @ infl / max(float(n_eff), 1.0)
+
+
+def score_derivatives(
+    cal, proba: np.ndarray, w: np.ndarray, source_prior: np.ndarray, prior: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per-row scores ``psi`` (n, k-1) of the free class shares at ``prior``, their weighted
+    mean's derivative ``A`` in the free shares (k-1, k-1) and ``D`` in ``eta = (theta,
+    pi^s_1..k-1)`` (k-1, m) — ``theta`` only with a calibration."""
+    k = proba.shape[1]
+    src = np.asarray(source_prior, dtype=float)
+    pi = np.asarray(prior, dtype=float)
+    wn = w / w.sum()
+    p, dp = _calibrated(cal, proba)
+    r = p / src
+    s = np.maximum(r @ pi, np.finfo(float).tiny)
+    u = r[:, 1:] - r[:, :1]
+    psi = u / s[:, None]
+    a = -(psi * wn[:, None]).T @ psi
+    # d psi_c / d r_l = (delta_lc - delta_l0) / s - psi_c pi_l / s   (c = 1..k-1)
+    e = np.zeros((k - 1, k))
+    e[np.arange(k - 1), np.arange(1, k)] = 1.0
+    e[:, 0] = -1.0
+    dpsi_dr = e[None] / s[:, None, None] - psi[:, :, None] * (pi / s[:, None])[:, None, :]
+    blocks = []
+    if dp is not None:
+        dr_dtheta = dp / src[None, :, None]
+        blocks.append(np.einsum("n,ncl,nlq->cq", wn, dpsi_dr, dr_dtheta, optimize=True))
+    # r_l = p_l / pi^s_l with pi^s_0 = 1 - the sum of the others
+    dr_dsrc = np.zeros((p.shape[0], k, k - 1))
+    rows = -p / src**2                           # d r_l / d pi^s_l
+    dr_dsrc[:, np.arange(1, k), np.arange(k - 1)] = rows[:, 1:]
+    dr_dsrc[:, 0, :] = -rows[:, :1]              # d r_0 / d pi^s_d = p_0 / (pi^s_0)^2
+    blocks.append(np.einsum("n,ncl,nld->cd", wn, dpsi_dr, dr_dsrc, optimize=True))
+    return psi, a, np.hstack(blocks)
+
+
+def analytic_prior_interval(
+    cal, proba: np.ndarray, w: np.ndarray, n_eff: float, source_prior: np.ndarray,
+    prior: np.ndarray, eta_cov: np.ndarray | None, confidence_level: float,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Delta-method interval of the maximum-likelihood ``prior`` of unlabelled rows ``proba``
+    (raw model posteriors; ``cal`` the fitted calibration or None). Returns ``(interval of
+    shape (k, 2), covariance of the k shares)``. ``eta_cov`` None: the labelled rows' error
+    is left out (the unlabelled rows' sampling error only)."""
+    k = proba.shape[1]
+    pi = np.asarray(prior, dtype=float)
+    wn = w / w.sum()
+    psi, a, d = score_derivatives(cal, proba, w, source_prior, pi)
+    centred = psi - wn @ psi
+    middle = (centred * wn[:, None]).T @ centred / max(float(n_eff), 1.0)
+    if eta_cov is not None:
+        if d.shape[1] != eta_cov.shape[0]:
+            raise ValueError("The labelled summary does not match the calibration.")
+        middle = middle + d @ eta_cov @ d.T
+    a_inv = np.linalg.pinv(a)
+    cov_free = a_inv @ middle @ a_inv.T
+    # all k shares: share 0 is one minus the others
+    t = np.vstack([-np.ones((1, k - 1)), np.eye(k - 1)])
+    cov = t @ cov_free @ t.T
+    se = np.sqrt(np.maximum(np.diag(cov), 0.0))
+    zq = float(norm.ppf(0.5 + confidence_level / 2.0))
+    lo = np.clip(pi - zq * se, 0.0, 1.0)
+    hi = np.clip(pi + zq * se, 0.0, 1.0)
+    return np.column_stack([lo, hi]), cov

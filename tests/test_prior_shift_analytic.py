@@ -1,0 +1,167 @@
+"""The analytic (delta-method) interval of the multiclass EM prior, and the small fitted
+wrapper it allows (no labelled rows kept beyond 20,000)."""
+
+from __future__ import annotations
+
+import pickle
+import warnings
+
+import numpy as np
+import pytest
+from scipy.optimize import approx_fprime
+from scipy.stats import multinomial
+from sklearn.frozen import FrozenEstimator
+from sklearn.linear_model import LogisticRegression
+
+from probwrap import PriorShiftWrapper
+from probwrap.shift import PriorEstimator
+from probwrap.shift._analytic import labelled_parameter_cov, score_derivatives
+from probwrap.shift._estimate import _solve_prior
+
+CENTRES = np.array([[0.0, 0.0], [1.5, 0.3], [0.4, 1.6]])
+
+
+def draw(n, prior, rng):
+    y = rng.choice(3, size=n, p=prior)
+    return CENTRES[y] + rng.normal(size=(n, 2)), y
+
+
+@pytest.fixture(scope="module")
+def model():
+    X, y = draw(5000, [0.5, 0.3, 0.2], np.random.default_rng(0))
+    return LogisticRegression(C=0.05).fit(X, y)  # shrunk: the calibration has work to do
+
+
+def _ml(p_cal, src, w):
+    return _solve_prior(p_cal, w, src, src, 1e-13, 100_000)[0]
+
+
+@pytest.mark.parametrize("kind", ["bcts", "vector"])
+def test_fixed_point_derivatives_match_scipy_finite_differences(model, kind):
+    # Reference: scipy.optimize.approx_fprime on the EM solver itself. By the implicit function
+    # theorem the maximum-likelihood prior moves with the labelled estimates eta = (theta,
+    # source prior) as d pi / d eta = -A^-1 D; re-solving EM (to 1e-13) at eta +- h gives the
+    # same derivative up to the finite-difference error (step 1e-6: about 1e-6 relative, so
+    # rtol 1e-4; atol for entries that are near 0).
+    rng = np.random.default_rng(1)
+    X, y = draw(1500, [0.5, 0.3, 0.2], rng)
+    X_new, _ = draw(1500, [0.3, 0.5, 0.2], rng)
+    est = PriorEstimator(calibration=kind, n_resamples=0).fit(model.predict_proba(X), y)
+    q = model.predict_proba(X_new)
+    w = np.ones(q.shape[0])
+    cal, src = est.calibrator_, est.source_prior_
+    n_scale = 1 if kind == "bcts" else 3
+    theta0 = np.concatenate([cal.scale_[:n_scale], cal.bias_[1:]])
+    eta0 = np.concatenate([theta0, src[1:]])
+    z = cal.log_scores(q)
+
+    def ml_at(eta):
+        theta, s_free = eta[:theta0.size], eta[theta0.size:]
+        scale = np.broadcast_to(theta[:n_scale], (3,))
+        bias = np.concatenate([[0.0], theta[n_scale:]])
+        logits = z * scale + bias
+        p = np.exp(logits - logits.max(1, keepdims=True))
+        p /= p.sum(1, keepdims=True)
+        s = np.concatenate([[1.0 - s_free.sum()], s_free])
+        return _ml(p, s, w)[1:]
+
+    pi = np.concatenate([[0.0], ml_at(eta0)])
+    pi[0] = 1.0 - pi[1:].sum()
+    _, a, d = score_derivatives(cal, q, w, src, pi)
+    implied = -np.linalg.solve(a, d)
+    numeric = np.column_stack([
+        approx_fprime(eta0, lambda e, j=j: ml_at(e)[j], 1e-6) for j in range(2)]).T
+    np.testing.assert_allclose(implied, numeric, rtol=1e-4, atol=1e-6)
+    # and A is minus the observed information: the Hessian of the mean log-likelihood in the
+    # free shares (scipy finite differences of its gradient)
+    r = est.calibrate(q) / src
+
+    def grad(free):
+        full = np.concatenate([[1.0 - free.sum()], free])
+        return ((r[:, 1:] - r[:, :1]) / (r @ full)[:, None]).mean(0)
+
+    hess = np.column_stack([approx_fprime(pi[1:], lambda f, j=j: grad(f)[j], 1e-7)
+                            for j in range(2)]).T
+    np.testing.assert_allclose(a, hess, rtol=1e-4)
+
+
+def test_labelled_share_block_is_the_multinomial_covariance():
+    # Reference: scipy.stats.multinomial(n, p).cov() / n^2 is the covariance of the sample
+    # shares of n draws; without a calibration the labelled summary is exactly that, for the
+    # shares the rows show (to rounding).
+    rng = np.random.default_rng(2)
+    y = rng.choice(3, size=400, p=[0.5, 0.3, 0.2])
+    share = np.bincount(y, minlength=3) / 400
+    cov = labelled_parameter_cov(None, np.full((400, 3), 1 / 3), y, np.ones(400), share, 400.0)
+    ref = multinomial(400, share).cov() / 400**2
+    np.testing.assert_allclose(cov, ref[1:, 1:], rtol=1e-10, atol=1e-15)
+
+
+@pytest.mark.slow
+def test_analytic_standard_error_matches_the_spread_over_draws(model):
+    # Consistency test by simulation (known truth): over 300 independent draws of 400 labelled
+    # and 1,500 unlabelled rows the standard deviation of the maximum-likelihood shares equals
+    # the analytic standard error (its mean over the draws) within 12 % (the Monte-Carlo error
+    # of a standard deviation from 300 draws is about 4 %; 3 of those), and the labelled rows'
+    # part matters: leaving it out gives a standard error at least 10 % too small here.
+    rng = np.random.default_rng(3)
+    target = np.array([0.3, 0.5, 0.2])
+    mls, ses, ses_unl = [], [], []
+    for _ in range(300):
+        X, y = draw(400, [0.5, 0.3, 0.2], rng)
+        X_new, _ = draw(1500, target, rng)
+        est = PriorEstimator(n_resamples=1, random_state=0).fit(model.predict_proba(X), y)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            res = est.estimate(model.predict_proba(X_new))
+        from probwrap.shift._analytic import analytic_prior_interval
+
+        q = model.predict_proba(X_new)
+        w = np.ones(q.shape[0])
+        full = analytic_prior_interval(est.calibrator_, q, w, 1500.0, est.source_prior_,
+                                       res.ml_prior, est._eta_cov(), 0.95)[1]
+        unl = analytic_prior_interval(est.calibrator_, q, w, 1500.0, est.source_prior_,
+                                      res.ml_prior, None, 0.95)[1]
+        mls.append(res.ml_prior)
+        ses.append(np.sqrt(np.diag(full)))
+        ses_unl.append(np.sqrt(np.diag(unl)))
+    sd = np.std(mls, axis=0, ddof=1)
+    np.testing.assert_allclose(np.mean(ses, axis=0), sd, rtol=0.12)
+    assert np.all(np.mean(ses_unl, axis=0) < 0.9 * sd)
+
+
+def test_large_multiclass_fit_keeps_a_summary_not_the_rows(model):
+    # Consistency test: beyond 20,000 labelled rows a three-class EM fit keeps only the
+    # labelled summary of the analytic interval; predictions, estimate and interval are those
+    # of keep_heldout=True (the same formula, the summary computed from the same rows: equal
+    # to rounding), and the pickle no longer grows with the rows.
+    rng = np.random.default_rng(4)
+    X, y = draw(25_000, [0.5, 0.3, 0.2], rng)
+    X_new, _ = draw(3000, [0.3, 0.5, 0.2], rng)
+    frozen = FrozenEstimator(model)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        slim = PriorShiftWrapper(frozen).fit(X, y).adapt(X_new)
+        full = PriorShiftWrapper(frozen, keep_heldout=True).fit(X, y).adapt(X_new)
+    assert slim.prior_estimator_._source_rows() is None
+    assert full.prior_estimator_._source_rows() is not None
+    np.testing.assert_array_equal(slim.predict_proba(X_new), full.predict_proba(X_new))
+    np.testing.assert_array_equal(slim.target_prior_, full.target_prior_)
+    np.testing.assert_allclose(slim.target_prior_interval_, full.target_prior_interval_,
+                               rtol=1e-12, atol=1e-15)
+    size_slim, size_full = len(pickle.dumps(slim)), len(pickle.dumps(full))
+    assert size_slim < 50_000 < 25_000 * 3 * 8 < size_full
+    # the interval holds the truth here and is not degenerate
+    lo, hi = slim.target_prior_interval_.T
+    assert np.all(lo < [0.3, 0.5, 0.2]) and np.all(hi > [0.3, 0.5, 0.2])
+    assert np.all(hi - lo > 0.01) and np.all(hi - lo < 0.1)
+    # a bootstrap interval asked for on the fitted estimator can redraw only the unlabelled
+    # rows, and says so; a wrapper fitted with interval="bca" keeps the rows it needs
+    est = slim.prior_estimator_
+    est.interval, est.n_resamples = "bca", 20
+    with pytest.warns(UserWarning, match="labelled rows were not kept"):
+        est.estimate(model.predict_proba(X_new))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        boot = PriorShiftWrapper(frozen, interval="bca", n_resamples=5).fit(X, y)
+    assert boot.prior_estimator_._source_rows() is not None
