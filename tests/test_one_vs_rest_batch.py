@@ -220,3 +220,58 @@ def test_fits_started_from_another_folds_parameters_equal_cold_fits(kind):
     assert _close(warm.scales_, cold.scales_) and _close(warm.intercepts_, cold.intercepts_)
     assert warm.boundary_ == cold.boundary_
 
+
+
+@pytest.mark.parametrize(
+    "template", [PlattMap(), PlattMap(limit_scores=True), BetaMap()], ids=repr
+)
+@pytest.mark.parametrize("case", ["random", "weighted", "ties", "probability_like", "separable"])
+def test_prepared_together_is_bit_identical_to_each_maps_prepare(template, case):
+    """fit_one_vs_rest prepares the Platt/beta fits of all classes at once (targets, floor,
+    score limits, beta's features): exactly the arrays and attributes of each map's own
+    _prepare; where a class's _prepare would warn (scores in [0, 1] for Platt, separated
+    classes for beta) it is left to it."""
+    from probwrap.calibration import _one_vs_rest as ovr
+
+    rng = np.random.default_rng(len(case) + 7)
+    n, k = 200, 5
+    S = rng.normal(size=(n, k)) * 3.0
+    y = rng.integers(0, k, size=n)
+    w = np.ones(n)
+    if case == "weighted":
+        w = rng.integers(0, 4, size=n).astype(float) * 1.7
+        w[:k] = 1.0
+        y[:k] = np.arange(k)
+    if case == "ties":
+        S = np.round(S)
+    if case == "probability_like":
+        S = rng.random((n, k))
+    if case == "separable":
+        S[np.arange(n), y] += 20.0
+    classes = list(range(k))
+    got = ovr._prepare_together(one_vs_rest_copy(template, k), S, y, w, classes)
+    warns = (case == "probability_like" and isinstance(template, PlattMap)) or (
+        case == "separable" and isinstance(template, BetaMap)
+    )
+    assert (got is None) == warns
+    if got is None:
+        return
+    prepared, limits = got
+    for i, c in enumerate(classes):
+        m = one_vs_rest_copy(template, k)
+        want = m._prepare(np.ascontiguousarray(S[:, c]), (y == c).astype(float), w)
+        for a, b in zip(prepared[i], want, strict=True):
+            assert a.shape == b.shape and np.array_equal(a, b)
+        assert getattr(m, "score_limits_", None) == (None if limits is None else limits[i])
+    # and the maps fitted through it equal those fitted with each map's own _prepare, exactly
+    together = fit_one_vs_rest(template, S, y, w, classes)
+    original = ovr._prepare_together
+    try:
+        ovr._prepare_together = lambda *args: None
+        alone = fit_one_vs_rest(template, S, y, w, classes)
+    finally:
+        ovr._prepare_together = original
+    for a, b in zip(together, alone, strict=True):
+        assert vars(a).keys() == vars(b).keys()
+        for key, va in vars(a).items():
+            assert np.array_equal(va, vars(b)[key]) if key != "boundary_" else va == vars(b)[key]

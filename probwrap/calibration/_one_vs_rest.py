@@ -326,7 +326,10 @@ def fit_one_vs_rest(
     inside = np.bincount(y_index[weighted].astype(np.intp), minlength=n_classes)
     outside = int(np.count_nonzero(weighted)) - inside
     blank = one_vs_rest_copy(template, n_classes)  # copied per class (unfitted: parameters only)
-    for k, yk in zip(classes, labels, strict=True):
+    together = None
+    if _fits_batched(blank) and all(inside[k] > 0 and outside[k] > 0 for k in classes):
+        together = _prepare_together(blank, S, y_index, w, classes)
+    for i, (k, yk) in enumerate(zip(classes, labels, strict=True)):
         m = object.__new__(type(blank))
         m.__dict__.update(blank.__dict__)
         y01 = yk.astype(float)
@@ -349,7 +352,14 @@ def fit_one_vs_rest(
         m.n_score_columns_ = 1
         s = np.ascontiguousarray(S[:, k])
         if _fits_batched(m):
-            ready.append((m, m._prepare(s, y01, w)))
+            if together is not None:
+                prepared, limits = together
+                m._set_floor(w, 2)  # (the same floor as _prepare sets; checked in the tests)
+                if isinstance(m, PlattMap):
+                    m.score_limits_ = None if limits is None else limits[i]
+                ready.append((m, prepared[i]))
+            else:
+                ready.append((m, m._prepare(s, y01, w)))
             before = start[k] if start is not None and k < len(start) else None
             prior.append(before if type(before) is type(m) and m.smooth_targets else None)
         else:
@@ -358,6 +368,72 @@ def fit_one_vs_rest(
     if ready:
         _solve_together(ready, w, prior)
     return maps
+
+
+def _prepare_together(
+    blank: CalibrationMap, S: np.ndarray, y_index: np.ndarray, w: np.ndarray, classes: list[int]
+) -> tuple[list[tuple], list | None] | None:
+    """``m._prepare(S[:, k], y == k, w)`` of the Platt or beta map ``blank`` for every class
+    ``k`` of ``classes`` at once: the same element-wise operations and the same sums (Platt's
+    smoothed targets from each class's weighted counts, the score limits, beta's features),
+    so the prepared arrays are bit-identical. Returns ``(prepared per class, score limits per
+    class or None)``, or None where a class's ``_prepare`` would warn or raise
+    (raw targets, scores that look like probabilities, separated classes, parameters that
+    are not True/False): those fits keep the maps' own ``_prepare`` and its messages. Every
+    class must have rows of positive weight in and outside it."""
+    smooth = blank.smooth_targets
+    if smooth is not True and not (isinstance(smooth, np.bool_) and bool(smooth)):
+        return None
+    platt = isinstance(blank, PlattMap)
+    limit = getattr(blank, "limit_scores", False)
+    if platt and not isinstance(limit, (bool, np.bool_)):
+        return None
+    P, n = len(classes), S.shape[0]
+    Sk = S[:, classes]
+    Y = y_index[None, :] == np.asarray(classes)[:, None]  # (P, n): row in class k
+    if platt and n > 2 and np.any((Sk.min(axis=0) >= 0.0) & (Sk.max(axis=0) <= 1.0)):
+        return None  # PlattMap's warning about scores that look like probabilities
+    # weighted counts out of class k (bin 2i) and in it (bin 2i + 1), each summed over the rows
+    # in order as np.bincount(y == k, weights=w) sums them
+    with np.errstate(over="ignore"):
+        counts = np.bincount(
+            (2 * np.arange(P)[:, None] + Y).ravel(), weights=np.tile(w, P), minlength=2 * P
+        ).reshape(P, 2)
+    counts = np.minimum(counts, 2.0**1000)  # as rule_of_succession_targets
+    rest = blank._rest_classes
+    t_in = (counts[:, 1] + 1.0) / (counts[:, 1] + 2.0)
+    t_out = 1.0 / (counts[:, 0] + 2.0) / rest
+    T = np.where(Y, t_in[:, None], t_out[:, None])
+    positive = w > 0
+    Sm = Sk.T  # (P, n)
+    pos_in, pos_out = Y & positive, ~Y & positive
+    in_max = np.where(pos_in, Sm, -np.inf).max(axis=1)
+    in_min = np.where(pos_in, Sm, np.inf).min(axis=1)
+    out_max = np.where(pos_out, Sm, -np.inf).max(axis=1)
+    out_min = np.where(pos_out, Sm, np.inf).min(axis=1)
+    if platt:
+        limits = None
+        if limit:
+            probe = object.__new__(type(blank))
+            probe.__dict__.update(blank.__dict__)
+            probe._set_floor(w, 2)  # the floor every class's map gets
+            half = float(np.log(2.0 / probe.floor_ - 1.0))
+            top = np.minimum(in_max, out_max)
+            bottom = np.maximum(in_min, out_min)
+            limits = [
+                (min(-half, float(b) - half), max(half, float(t) + half))
+                for t, b in zip(top, bottom, strict=True)
+            ]
+            bound = np.array(limits)  # (P, 2): as PlattMap._limited clips each class
+            Sm = np.clip(Sm, bound[:, :1], bound[:, 1:])
+        return [(Sm[i], T[i]) for i in range(P)], limits
+    up = (out_max <= in_min) & (in_max > out_min)
+    down = (in_max <= out_min) & (out_max > in_min)
+    if np.any(up | down):
+        return None  # BetaMap's warning about separated classes
+    X = np.stack([log_expit(Sm), -log_expit(-Sm)], axis=2)  # (P, n, 2), as _beta_features
+    wb = w / power_of_two_unit(w)
+    return [(X[i], T[i], wb) for i in range(P)], None
 
 
 def _solve_together(ready: list[tuple[CalibrationMap, tuple]], w: np.ndarray, prior: list) -> None:
