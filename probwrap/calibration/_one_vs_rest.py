@@ -8,8 +8,8 @@ saves the fixed cost of k - 1 NumPy calls per operation (the arithmetic per row 
 few hundred rows per class it is about half of the solver's time). Each map is fitted as
 ``one_vs_rest_copy(template, k).fit(...)`` fits it: the same checks, targets, floor and
 limits (the maps' own ``_prepare`` and ``_set_solution``), the same Newton iteration with each
-problem's own line search; it stops once the Newton decrement is below 1e-20 (the one-problem
-solver: 1e-26) and may start from given parameters. Parameters agree with one map at a time
+problem's own line search; it stops once the Newton decrement is below 1e-16 with smoothed
+targets, 1e-20 with raw ones (the one-problem solver: 1e-26) and may start from given parameters. Parameters agree with one map at a time
 to 1e-9 (tests; seen: 1e-14).
 """
 
@@ -36,6 +36,7 @@ def batched_weighted_logistic(
     *,
     max_iter: int = 200,
     start: tuple[np.ndarray, np.ndarray] | None = None,
+    finite_optimum: bool = False,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """``_weighted_logistic`` for ``P`` problems on the same rows and weights at once.
 
@@ -52,6 +53,12 @@ def batched_weighted_logistic(
     e.g. from the same class's fit on another fold of mostly the same rows, which saves about
     half of the iterations. Only for problems with a finite optimum (smoothed targets): the
     iteration then converges to it to machine precision from any start.
+
+    ``finite_optimum=True`` (targets strictly between 0 and 1, e.g. smoothed) lets the
+    iteration stop sooner, after a step whose decrement is below :data:`_DECREMENT_DONE`
+    instead of 1e-20: with a finite optimum the convergence is quadratic there. (Without one,
+    on separated rows, the parameters grow without bound and the decrement falls only
+    geometrically: the later stop is kept.)
     """
     P, n, d = X.shape
     wn = w / power_of_two_unit(w)
@@ -85,7 +92,7 @@ def batched_weighted_logistic(
         try:
             theta, ok = _batched_newton(
                 (Xs[batch] - mu[batch, None, :]) / sd[batch, None, :], T[batch], wn, max_iter,
-                theta0,
+                theta0, _DECREMENT_DONE if finite_optimum else 1e-20,
             )
         except np.linalg.LinAlgError:
             alone[:] = True  # one at a time: the singular problem raises as it would alone
@@ -108,15 +115,28 @@ def _powers_of_two_units(X: np.ndarray) -> np.ndarray:
     return np.where(usable, np.ldexp(1.0, exponent - 1), 1.0)
 
 
+#: with a finite optimum (smoothed targets) the batched Newton iteration stops after a step
+#: whose Newton decrement (the squared length of the step in the Hessian's norm) is below this. Converging quadratically, the error left
+#: after such a step is of the order of the step's squared length, 1e-16 of the curvature's
+#: scale: the parameters of _weighted_logistic (which stops below 1e-26, an evaluation or two
+#: later) to rounding (tests: 1e-9; seen: below 1e-13)
+_DECREMENT_DONE = 1e-16
+
+
 def _batched_newton(
-    Z: np.ndarray, T: np.ndarray, wn: np.ndarray, max_iter: int, theta0: np.ndarray
+    Z: np.ndarray,
+    T: np.ndarray,
+    wn: np.ndarray,
+    max_iter: int,
+    theta0: np.ndarray,
+    stop_below: float = 1e-20,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Newton iterations of ``_weighted_logistic`` on standardised features ``Z`` (P, n, d),
     for every problem at once, from ``theta0`` (P, d + 1); returns ``(theta, converged (P,))``.
 
     The same iteration as ``_weighted_logistic``: Newton steps with a backtracking line search
     (Armijo constant 1e-4, halving) until the Newton decrement falls below 1e-10, then full
-    steps until it falls below 1e-20 (``_weighted_logistic``: 1e-26; the same parameters to
+    steps until it falls below ``stop_below`` (``_weighted_logistic``: 1e-26; the same parameters to
     rounding) or the step below 1e-14 of the parameters. Each problem keeps its own step
     length, count and stopping rule; a problem that stops leaves the batch. The loss is
     computed only where the line search's test is not certain from the self-concordance bound.
@@ -182,7 +202,7 @@ def _batched_newton(
             # (the same arithmetic as the general bookkeeping below)
             if quad.all():
                 new = theta - step
-                stop = (decrement < 1e-20) | (
+                stop = (decrement < stop_below) | (
                     np.abs(step).max(axis=1) < 1e-14 * (1.0 + np.abs(new).max(axis=1))
                 )
                 if stop.all():
@@ -210,11 +230,8 @@ def _batched_newton(
             q = active[quad]
             sq = step[quad]
             theta[q] -= sq
-            # (_weighted_logistic stops below a decrement of 1e-26; below 1e-20 the step
-            # just taken is below 1e-10 of the curvature's scale and, converging
-            # quadratically, leaves an error of the order of its square: the same parameters
-            # to rounding, one evaluation sooner)
-            stop = (decrement[quad] < 1e-20) | (
+            # (_weighted_logistic stops below a decrement of 1e-26; see _DECREMENT_DONE)
+            stop = (decrement[quad] < stop_below) | (
                 np.abs(sq).max(axis=1) < 1e-14 * (1.0 + np.abs(theta[q]).max(axis=1))
             )
             converged[q[stop]] = True
@@ -458,7 +475,9 @@ def _solve_together(ready: list[tuple[CalibrationMap, tuple]], w: np.ndarray, pr
         X = np.stack([x for _, (x, _t, _w) in ready])
         T = np.stack([t for _, (_x, t, _w) in ready])
         ww = ready[0][1][2]  # the weights scaled by BetaMap._prepare (the same for every class)
-    coef, intercept, converged = batched_weighted_logistic(X, T, ww, start=start)
+    coef, intercept, converged = batched_weighted_logistic(
+        X, T, ww, start=start, finite_optimum=all(m.smooth_targets for m, _ in ready)
+    )
     for i, (m, prepared) in enumerate(ready):
         if platt:
             m._set_solution(coef[i], float(intercept[i]), bool(converged[i]))
