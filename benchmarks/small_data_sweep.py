@@ -333,8 +333,8 @@ def sklearn_calibrated(frozen, Xc, yc, Xt):
                 warnings.simplefilter("ignore")
                 out[m] = CalibratedClassifierCV(frozen, method=m, cv=KFold(2)).fit(
                     Xc, yc).predict_proba(Xt)
-        except ValueError:  # e.g. a class missing from a fold
-            pass
+        except (ValueError, IndexError):  # a class missing from a fold (IndexError from
+            pass  # scikit-learn 1.9's cross_val_predict when a fold lacks a class)
     return out
 
 
@@ -852,6 +852,8 @@ def main(argv: list[str]) -> None:
                     n_draws += 1
                     where = f"{dname}|{mname}|seed{seed}|{draw}"
                     t_rows = test_rows[~np.isin(test_rows, cal)][:800] if new else test_rows
+                    if len(t_rows) == 0:  # a tiny set (80 rows): the draw took every row
+                        continue
                     Xt, yt = X[t_rows], y_index[t_rows]
                     base_t = model.predict_proba(Xt)
                     Xc, yc = X[cal].copy(), y_index[cal].copy()

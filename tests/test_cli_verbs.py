@@ -335,3 +335,44 @@ def test_library_warnings_reach_stderr_as_single_lines(tmp_path, capsys):
     assert "separate the two classes perfectly" in err
     assert all(line.startswith("probwrap calibrate: warning: ") for line in err.splitlines())
     assert "fitted a beta map on 6 rows" in out
+
+
+def test_report_summary_names_the_recommended_cutoff(tmp_path, capsys):
+    # a score file whose least-cost cutoff is not the recommended one (the settled cutoff,
+    # decision.settle_cutoff): the terminal line used to print only the least-cost cutoff
+    from probwrap.decision import settle_cutoff
+
+    rng = np.random.default_rng(11)  # the draw of tests/test_report_recommendation.py
+    n = int(rng.integers(40, 200))
+    t = rng.beta(1, 3, n)
+    y = (rng.uniform(size=n) < t).astype(int)
+    p = np.clip(t ** rng.uniform(0.4, 2.5), 1e-6, 1 - 1e-6)
+    pd.DataFrame({"risk": p, "damaged": y}).to_csv(tmp_path / "s.csv", index=False)
+    args = ["report", "--scores", tmp_path / "s.csv", "--score-column", "risk", "--label-column",
+            "damaged", "--cost-fp", 1, "--cost-fn", 4, "--resamples", 10, "--out",
+            tmp_path / "r.html"]
+    code, out, err = run(capsys, *args, "--format", "json")
+    assert code == 0, err
+    got = json.loads(out)
+    ref = settle_cutoff(p, y, {"fp": 1.0, "fn": 4.0})
+    assert got["cutoff"] == ref.least_cost and got["recommended_cutoff"] == ref.cutoff
+    code, out, err = run(capsys, *args)
+    assert f"recommended cutoff {ref.cutoff:.4f}" in out and f"{ref.least_cost:.4f}" in out
+
+
+def test_cutoff_text_explains_a_negative_cutoff(tmp_path, capsys):
+    # a forest's scores of exactly 0 and a dear false negative: "act on every row" needs a
+    # cutoff below 0, which the text says in words (a reader expects probabilities)
+    p = np.array([0.0, 0.0, 0.0, 0.1, 0.2, 0.4, 0.6, 0.9])
+    y = np.array([1, 0, 0, 1, 0, 1, 1, 1])
+    pd.DataFrame({"risk": p, "hit": y}).to_csv(tmp_path / "f.csv", index=False)
+    args = ["cutoff", "--scores", tmp_path / "f.csv", "--score-column", "risk", "--label-column",
+            "hit", "--cost-fp", 1, "--cost-fn", 50, "--resamples", 0]
+    code, out, err = run(capsys, *args, "--format", "json")
+    assert code == 0, err
+    assert json.loads(out)["cutoff"] < 0
+    code, out, err = run(capsys, *args)
+    assert "a cutoff below 0 acts on every row" in out
+    # a cutoff inside (0, 1): no such line
+    code, out, err = run(capsys, *args[:-4], "--cost-fn", 1, "--resamples", 0)
+    assert code == 0 and "below 0" not in out

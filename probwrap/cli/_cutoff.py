@@ -216,6 +216,11 @@ def _text(out: dict[str, Any], path: str) -> str:
     ]
     if out["cost_flag_all"] is not None:
         lines.append(f"  acting on every row   {out['cost_flag_all']:.6g}")
+    ci = out["cutoff_interval"]
+    if out["score_scale"] == "proba" and min(
+            [out["cutoff"]] + ([] if ci is None else [ci[0]])) < 0:
+        # rows scored exactly 0 (a forest) are acted on only by a cutoff below 0
+        lines.append("  (a cutoff below 0 acts on every row, including rows scored exactly 0)")
     g = out.get("guarantee")
     if g is not None:
         side = ">=" if g["requirement"] in ("recall", "precision") else "<="

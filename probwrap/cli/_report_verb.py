@@ -407,7 +407,15 @@ def _handler(args: argparse.Namespace) -> int:
     line = f"wrote {args.out}: {content.n_rows} labelled rows (positive label {shown(labels[1])})"
     if content.chosen_cutoff is not None:
         summary["cutoff"] = float(content.chosen_cutoff)
-        line += f", cutoff {content.chosen_cutoff:.4f}"
+        rec = getattr(content, "recommendation", None)
+        if rec is None or rec.cutoff == content.chosen_cutoff:
+            line += f", cutoff {content.chosen_cutoff:.4f}"
+        else:
+            # the page recommends another cutoff than the least-cost one (the settled or Bayes
+            # cutoff, a capacity or a new prevalence): say both, the recommendation first
+            summary["recommended_cutoff"] = float(rec.cutoff)
+            line += (f", recommended cutoff {rec.cutoff:.4f} ({rec.name}; least-cost cutoff "
+                     f"{content.chosen_cutoff:.4f} on these rows)")
     if content.target_prevalence is not None:
         summary.update(source_prevalence=float(content.source_prevalence),
                        target_prevalence=float(content.target_prevalence),
