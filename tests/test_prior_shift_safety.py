@@ -840,3 +840,50 @@ def test_few_labelled_rows_keep_a_calibrated_models_probabilities_on_bundled_bre
     assert not wrapper.calibrator_.identity_kept_ and wrapper.calibrator_.identity_pvalue_ < 0.05
     assert (log_loss(y[test], wrapper.predict_proba(X[test]))
             < log_loss(y[test], nb.predict_proba(X[test])))
+
+
+class _ConstantModel:
+    """A fitted two-class model giving every row the same probability (as a gradient boosting
+    trained on 22 rows of lifelines' larynx data did in the sweep)."""
+
+    classes_ = np.array([0, 1])
+    n_features_in_ = 1
+
+    def fit(self, X, y):
+        return self
+
+    def predict_proba(self, X):
+        n = np.asarray(X).shape[0]
+        return np.column_stack([np.full(n, 0.409), np.full(n, 0.591)])
+
+    def get_params(self, deep=True):
+        return {}
+
+
+def test_score_interval_of_constant_posteriors_is_everything():
+    # every row has the same posterior, so the score is the same constant in both samples at
+    # every candidate prior: no prior can be rejected, and the interval is [0, 1] (before, the
+    # statistic was rounding noise over a zero variance and Brent's method stopped with
+    # "f(a) and f(b) must have different signs")
+    p_t = np.tile([0.409, 0.591], (30, 1))
+    p_s = np.tile([0.409, 0.591], (38, 1))
+    y_s = np.r_[0, np.ones(37, int)]
+    interval, consistent = score_interval(p_t, p_s, y_s, [1 / 38, 37 / 38])
+    np.testing.assert_array_equal(interval, [0.0, 1.0])
+    assert consistent
+
+
+def test_adapt_with_constant_scores_warns_and_does_not_move():
+    X_cal, y_cal = np.arange(38.0)[:, None], np.r_[0, np.ones(37, int)]
+    X_new = np.arange(30.0)[:, None]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # one labelled row of class 0: warned at fit
+        wrapper = PriorShiftWrapper(FrozenEstimator(_ConstantModel()), random_state=0,
+                                    n_resamples=30).fit(X_cal, y_cal)
+    before = wrapper.predict_proba(X_new)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        wrapper.adapt(X_new)
+    assert any(issubclass(c.category, PriorNotIdentifiedWarning) for c in caught)
+    np.testing.assert_array_equal(wrapper.target_prior_interval_, [[0.0, 1.0], [0.0, 1.0]])
+    np.testing.assert_allclose(wrapper.predict_proba(X_new), before, rtol=0, atol=1e-12)

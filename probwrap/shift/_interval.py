@@ -286,10 +286,24 @@ def score_interval(
         return out
 
     crit = float(chi2.ppf(level, 1))
+    if np.ptp(np.concatenate([p_t[:, 1], p_s[:, 1]])) == 0.0:
+        # every row has the same posterior: the score is the same constant in both samples for
+        # every candidate prior, so no prior is rejected (the statistic would be rounding noise
+        # over a zero variance); the data cannot place the prior at all
+        return np.array([0.0, 1.0]), True
 
     def excess(t: float) -> float:
         v = float(stat(np.array([t]))[0])
         return (v if np.isfinite(v) else 1e300) - crit
+
+    def root(outer: float, inner: float) -> float:
+        """The endpoint between a rejected ``outer`` and an accepted ``inner`` prior; where a
+        near-zero variance makes the statistic rounding-sensitive and the two points no longer
+        bracket a root when evaluated one at a time, the outer (wider, conservative) point."""
+        f_out, f_in = excess(outer), excess(inner)
+        if not (f_out > 0 >= f_in):
+            return float(outer)
+        return float(brentq(excess, min(outer, inner), max(outer, inner), xtol=1e-10))
 
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         if centre is not None and excess(float(centre)) <= 0:
@@ -307,8 +321,6 @@ def score_interval(
             best = float(grid[int(np.argmin(values))])
             return np.array([best, best]), False
         first, last = int(np.flatnonzero(ok)[0]), int(np.flatnonzero(ok)[-1])
-        lo_t = grid[first] if first == 0 else brentq(excess, grid[first - 1], grid[first],
-                                                     xtol=1e-10)
-        hi_t = grid[last] if last == grid.shape[0] - 1 else brentq(excess, grid[last],
-                                                                   grid[last + 1], xtol=1e-10)
+        lo_t = grid[first] if first == 0 else root(grid[first - 1], grid[first])
+        hi_t = grid[last] if last == grid.shape[0] - 1 else root(grid[last + 1], grid[last])
     return np.array([float(lo_t), float(hi_t)]), True
