@@ -74,6 +74,14 @@ _ORDER_MAPS_MIN_CLASS_ROWS = 8
 
 _ORDER_BASED_NAMES = ("binning", "isotonic", "venn_abers")
 
+#: For multiclass models, ``method="auto"``'s one-vs-rest candidates (a binary map per class:
+#: Platt, beta and the order-based maps) are not eligible when the smallest class has fewer than
+#: this many held-out rows (of weight > 0): that class's map then rests on one or two rows per
+#: fold, while temperature and vector scaling share their parameters across the classes
+#: (measured on the real-data sweep's 3-class diabetes set and benchmarks/calibration.py, see
+#: docs/calibration.md).
+_ONE_VS_REST_MIN_CLASS_ROWS = 8
+
 #: Probabilities are floored at this value when scoring candidate maps by log loss, so that a map
 #: that predicts an exact 0 for an event that happens is heavily penalised but stays finite.
 _LOG_LOSS_FLOOR = 1e-15
@@ -319,6 +327,16 @@ class _AutoChoice:
                         "needs for a cross-validated score to be evidence"
                     )
                 names = [nm for nm in names if nm not in _ORDER_BASED_NAMES]
+        if not binary and present.min() < _ONE_VS_REST_MIN_CLASS_ROWS:
+            ovr_names = [nm for nm in names if not CALIBRATION_METHODS[nm].supports_multiclass]
+            if len(ovr_names) < len(names):  # never leaves auto without a candidate
+                for nm in ovr_names:
+                    notes[nm] = (
+                        f"not eligible: the smallest class has {int(present.min())} held-out "
+                        f"row(s), fewer than the {_ONE_VS_REST_MIN_CLASS_ROWS} a one-vs-rest map "
+                        "needs for its cross-validated score to be evidence"
+                    )
+                names = [nm for nm in names if nm not in ovr_names]
         rows = self._selection_rows(ho)
         if rows is not None:
             scores, y, w = scores[rows], y[rows], w[rows]

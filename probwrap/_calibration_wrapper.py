@@ -121,7 +121,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         with the smoothed isotonic fit to within about 1/n. On ties in the number of
         parameters, Venn–Abers is preferred to isotonic regression. With fewer than 8 held-out
         rows in some class the order-based maps (binning, isotonic, Venn–Abers) are not
-        eligible (``method_notes_`` says so).
+        eligible, and for a multiclass model no one-vs-rest map is (Platt and beta included);
+        ``method_notes_`` says so.
     clip : float or None, default=None
         Only for the parametric maps (Platt, beta, temperature) fitted on ``predict_proba``
         output: log-odds are clipped to ``±logit(1 - clip)`` (log-probabilities floored at

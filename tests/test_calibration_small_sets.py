@@ -661,3 +661,34 @@ def test_platt_limit_keeps_the_order_of_one_sided_boosting_scores():
     loss_ours = log_loss(y[test], ours.predict_proba(X[test]))
     loss_sk = log_loss(y[test], sk.predict_proba(X[test]))
     assert loss_ours <= 1.01 * loss_sk
+
+
+def test_auto_leaves_one_vs_rest_maps_out_when_a_class_has_few_rows():
+    # scikit-learn's diabetes, progression cut into tertiles; a 50-tree forest trained on 110
+    # rows; 20 calibration rows with class counts [8, 2, 10]. The class of 2 rows sits in at
+    # most two folds, so the one-vs-rest maps' cross-validated scores are not evidence: before,
+    # auto chose one-vs-rest beta (test log loss 1.20x the forest's own; temperature scaling
+    # 0.99x). Now only the multiclass maps compete (consistency test against the named beta
+    # map on the same rows).
+    from sklearn.datasets import load_diabetes
+
+    X, t = load_diabetes(return_X_y=True)
+    y = np.digitize(t, np.quantile(t, [1 / 3, 2 / 3]))
+    idx = np.random.default_rng(0).permutation(len(y))
+    fit, rest = idx[:110], idx[110:]
+    model = RandomForestClassifier(n_estimators=50, random_state=0).fit(X[fit], y[fit])
+    cal = np.random.default_rng([0, 7]).choice(rest, 20, replace=False)
+    test = rest[~np.isin(rest, cal)]
+    assert np.bincount(y[cal]).tolist() == [8, 2, 10]
+    frozen = FrozenEstimator(model)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        auto = CalibrationWrapper(frozen, method="auto", random_state=0).fit(X[cal], y[cal])
+        beta = CalibrationWrapper(frozen, method="beta", random_state=0).fit(X[cal], y[cal])
+    assert auto.method_ in ("temperature", "vector_scaling")
+    for name in ("platt", "beta", "binning", "isotonic", "venn_abers"):
+        assert name not in auto.method_scores_
+        assert "one-vs-rest" in auto.method_notes_[name] or "order-based" in auto.method_notes_[name]
+    assert "one-vs-rest map" in auto.method_notes_["beta"]
+    assert log_loss(y[test], auto.predict_proba(X[test])) < log_loss(
+        y[test], beta.predict_proba(X[test]))
