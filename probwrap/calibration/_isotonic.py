@@ -16,10 +16,38 @@ __all__ = ["IsotonicMap"]
 _COUNT_CAP = 2.0**1000
 
 
+#: Sorted scores closer than this many units of rounding count as tied (see ``_tie_starts``).
+TIE_ULPS = 8
+
+
+def _tie_starts(s: np.ndarray, first: np.ndarray) -> None:
+    """Set ``first[1:]`` to whether each sorted score starts a new group of tied scores.
+
+    Two neighbouring scores ``a <= b`` are tied when ``b - a <= TIE_ULPS * 2**-52 * max(min(|a|,
+    |b|), q)``, with ``q`` the larger magnitude of the (finite) lower and upper quartile scores:
+    a few units of rounding of the scores' own size. Scores that one model gives equal values
+    but that were computed along different paths (one-vs-rest log-odds ``log p_k - log(sum of
+    the others)``, whose sum rounds differently in SciPy 1.12 and later, or in one call per
+    class and one over all classes) then stay one group, so the order-based maps and their
+    cross-validated losses do not move with the environment. Groups chain: a run of scores each
+    within the tolerance of the next is one group.
+    """
+    n = s.shape[0]
+    if n < 2:
+        return
+    q = [abs(float(v)) for v in (s[n // 4], s[(3 * n) // 4]) if np.isfinite(v)]
+    tol = np.minimum(np.abs(s[1:]), np.abs(s[:-1]))
+    np.maximum(tol, max(q, default=0.0), out=tol)
+    tol *= TIE_ULPS * np.finfo(float).eps
+    with np.errstate(invalid="ignore", over="ignore"):  # inf - inf: equal, tied
+        np.greater(s[1:] - s[:-1], tol, out=first[1:])
+
+
 def _pool_ties(
     scores: np.ndarray, y: np.ndarray, w: np.ndarray, *, unit_weight_as_none: bool = False
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Sort once and pool tied scores.
+    """Sort once and pool tied scores (equal to a few units of rounding, see ``_tie_starts``;
+    each group is represented by its smallest score).
 
     Rows of zero weight carry no information and are left out. Returns the distinct scores
     (increasing), the total weight of each (``None`` for all-ones weights without ties when
@@ -38,7 +66,7 @@ def _pool_ties(
         s = both[order]
         is_pos = (order >= neg.shape[0]).astype(float)
         first = np.ones(s.shape[0], dtype=bool)
-        np.not_equal(s[1:], s[:-1], out=first[1:])
+        _tie_starts(s, first)
         if first.all():
             return s, (None if unit_weight_as_none else np.ones(s.shape[0])), is_pos
         starts = np.flatnonzero(first)
@@ -49,7 +77,7 @@ def _pool_ties(
     order = np.argsort(sc)
     s, ys, ww = sc[order], yy[order], ww[order]
     first = np.ones(s.shape[0], dtype=bool)
-    np.not_equal(s[1:], s[:-1], out=first[1:])
+    _tie_starts(s, first)
     if first.all():  # no ties: nothing to pool
         return s, ww, ww * ys
     starts = np.flatnonzero(first)
