@@ -13,6 +13,7 @@ import warnings
 import numpy as np
 from scipy.special import expit
 
+from ._analytic import _logit_jacobian
 from ._calibration import _log_softmax
 from ._confusion import _simplex_least_squares
 from ._estimate import _solve_prior
@@ -119,12 +120,7 @@ class _Resampling:
             n_scale = 1 if cal.kind == "temperature" else k
             p = np.exp(_log_softmax(z * cal.scale_ + cal.bias_, axis=1))
             n = z.shape[0]
-            jac = np.zeros((n, k, n_scale + k - 1))
-            if n_scale == 1:
-                jac[:, :, 0] = z
-            else:
-                jac[:, np.arange(k), np.arange(k)] = z
-            jac[:, np.arange(1, k), n_scale + np.arange(k - 1)] = 1.0
+            jac = _logit_jacobian(z, n_scale)
             resid = p - parts["onehot"]
             parts["grad"] = np.einsum("nkp,nk->np", jac, resid)
             curv = p[:, :, None] * np.eye(k)[None] - p[:, :, None] * p[:, None, :]
