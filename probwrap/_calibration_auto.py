@@ -97,6 +97,16 @@ def _boundary_of(cal: Any) -> str | None:
     return None
 
 
+def _drop_ineligible(names: list[str], drop: list[str], notes: dict, reason: str) -> list[str]:
+    """``names`` without ``drop``, each dropped name noted with ``reason``; unchanged when that
+    would leave ``auto`` without a candidate."""
+    if len(drop) == len(names):
+        return names
+    for nm in drop:
+        notes[nm] = reason
+    return [nm for nm in names if nm not in drop]
+
+
 class _AutoChoice:
     """The automatic choice of ``CalibrationWrapper``: scores every candidate map by
     cross-validated log loss and keeps the simplest one within one standard error of the best.
@@ -317,26 +327,22 @@ class _AutoChoice:
             warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
             notes[fallback] = "chosen without cross-validation: " + reason
             return fallback, {}, notes
-        if present.min() < _ORDER_MAPS_MIN_CLASS_ROWS:
-            few = [nm for nm in names if nm in _ORDER_BASED_NAMES]
-            if len(few) < len(names):  # never leaves auto without a candidate
-                for nm in few:
-                    notes[nm] = (
-                        f"not eligible: the smallest class has {int(present.min())} held-out "
-                        f"row(s), fewer than the {_ORDER_MAPS_MIN_CLASS_ROWS} an order-based map "
-                        "needs for a cross-validated score to be evidence"
-                    )
-                names = [nm for nm in names if nm not in _ORDER_BASED_NAMES]
-        if not binary and present.min() < _ONE_VS_REST_MIN_CLASS_ROWS:
-            ovr_names = [nm for nm in names if not CALIBRATION_METHODS[nm].supports_multiclass]
-            if len(ovr_names) < len(names):  # never leaves auto without a candidate
-                for nm in ovr_names:
-                    notes[nm] = (
-                        f"not eligible: the smallest class has {int(present.min())} held-out "
-                        f"row(s), fewer than the {_ONE_VS_REST_MIN_CLASS_ROWS} a one-vs-rest map "
-                        "needs for its cross-validated score to be evidence"
-                    )
-                names = [nm for nm in names if nm not in ovr_names]
+        smallest = int(present.min())
+        if smallest < _ORDER_MAPS_MIN_CLASS_ROWS:
+            names = _drop_ineligible(
+                names, [nm for nm in names if nm in _ORDER_BASED_NAMES], notes,
+                f"not eligible: the smallest class has {smallest} held-out row(s), fewer than "
+                f"the {_ORDER_MAPS_MIN_CLASS_ROWS} an order-based map needs for a "
+                "cross-validated score to be evidence",
+            )
+        if not binary and smallest < _ONE_VS_REST_MIN_CLASS_ROWS:
+            names = _drop_ineligible(
+                names, [nm for nm in names if not CALIBRATION_METHODS[nm].supports_multiclass],
+                notes,
+                f"not eligible: the smallest class has {smallest} held-out row(s), fewer than "
+                f"the {_ONE_VS_REST_MIN_CLASS_ROWS} a one-vs-rest map needs for its "
+                "cross-validated score to be evidence",
+            )
         rows = self._selection_rows(ho)
         if rows is not None:
             scores, y, w = scores[rows], y[rows], w[rows]
