@@ -424,11 +424,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         multiclass = self.classes_.shape[0] > 2
         if multiclass and (_is_dask(X) or _is_dask(sample_weight)):
             # Multiclass Dask rows: EM / BBSE as reductions over the calibrated posteriors on
-            # the workers (one pass per EM iteration); a point estimate, no interval.
+            # the workers (one pass per EM iteration); with the analytic interval (EM).
             from .scale._entry import estimate_multiclass_target
 
             res = estimate_multiclass_target(est, self.estimator_, X, sample_weight)
-            return self._finish_adapt(res, None)
+            return self._finish_adapt(res, res.interval)
         if _is_dask(X) or _is_dask(sample_weight):
             # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is
             # estimated from the tally's weighted rows. Bootstrapping tally rows would not
