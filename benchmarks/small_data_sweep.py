@@ -813,6 +813,19 @@ def main(argv: list[str]) -> None:
         skip = argv[argv.index("--skip") + 1].split(",")
         sets = [s for s in sets if not any(part in s[0] for part in skip)]
     n_draws = 0
+    try:
+        n_draws = _sweep_sets(sets, seeds, quick)
+    except KeyboardInterrupt:  # Ctrl-C (or kill -INT): the tables of the draws done so far
+        print(f"\ninterrupted: the tables below count the {_done['draws']} draws done so far")
+        n_draws = _done["draws"]
+    _summary(n_draws)
+
+
+_done = {"draws": 0}
+
+
+def _sweep_sets(sets, seeds, quick) -> int:
+    n_draws = 0
     for dname, X, y, new in sets:
         X = np.asarray(X, float)
         classes, y_index = np.unique(np.asarray(y), return_inverse=True)
@@ -850,6 +863,7 @@ def main(argv: list[str]) -> None:
                              if new else draws(y_index, pool, k, rng, sizes))
                 for draw, cal in cal_draws:
                     n_draws += 1
+                    _done["draws"] = n_draws
                     where = f"{dname}|{mname}|seed{seed}|{draw}"
                     t_rows = test_rows[~np.isin(test_rows, cal)][:800] if new else test_rows
                     if len(t_rows) == 0:  # a tiny set (80 rows): the draw took every row
@@ -873,6 +887,10 @@ def main(argv: list[str]) -> None:
                     if not (np.array_equal(Xc, Xc0) and np.array_equal(yc, yc0)):
                         note("wrappers", "inplace", where)
                 print(f"{dname} {mname} seed {seed} done", flush=True)
+    return n_draws
+
+
+def _summary(n_draws: int) -> None:
     kinds = ["crash", "nonfinite", "exact0/1", "rowsum", "inplace", "wscale", "freq", "harm",
              "harm<200", "vs_sk", "vs_sk<200"]
     print(f"\n{n_draws} calibration draws\n")

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import warnings
 from collections.abc import Mapping
 from typing import Any
@@ -18,7 +19,7 @@ from ._cost_policy_summary import (  # the prior-shift wrapper reads these two f
     _summary_interval,
 )
 from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, check_fitted, is_frozen
-from ._validation import check_labels, check_sample_weight, plain
+from ._validation import check_labels, check_sample_weight, plain, power_of_two_unit
 from .decision import (
     apply_class_offsets,
     budget_actions,
@@ -431,7 +432,14 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
                     else row_costs[np.arange(chosen.shape[0]), ho.y_index, chosen]
                 )
             w = ho.sample_weight
-            self.heldout_cost_ = float(np.dot(w, realised) / w.sum())
+            with np.errstate(over="ignore"):
+                cost = float(np.dot(w, realised) / w.sum())
+            if not math.isfinite(cost):
+                # costs near the largest float: the sum overflowed; the same mean on the costs
+                # divided by a power of two (exact), scaled back (finite: a mean of finite costs)
+                unit = power_of_two_unit(realised)
+                cost = float(np.dot(w / w.sum(), realised / unit)) * unit
+            self.heldout_cost_ = cost
         return self
 
     def _fit_rule_dask(self, X: Any, y: Any, sample_weight: Any) -> CostPolicyWrapper:

@@ -185,6 +185,22 @@ def client():
     cluster.close()
 
 
+@pytest.fixture(scope="session")
+def report_page_parser():
+    """tests/test_report_structure.py as a module, for its HTML page parser (``_Page``, ``_val``).
+
+    The tests run in importlib mode without a package, so one test file cannot import another;
+    the report tests of other files share the parser through this fixture.
+    """
+    import importlib.util
+
+    path = Path(__file__).with_name("test_report_structure.py")
+    spec = importlib.util.spec_from_file_location("_pw_test_report_structure", path)
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
 # Spark's Python workers (also those of the Spark docs blocks, run in subprocesses) use this
 # interpreter, so they import the probwrap under test.
 os.environ.setdefault("PYSPARK_PYTHON", sys.executable)

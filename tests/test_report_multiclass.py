@@ -24,22 +24,6 @@ from probwrap.metrics import (
 from probwrap.report import CAUTIONS, MulticlassReportContent, write_report
 from probwrap.shift import PriorEstimator, adjust_to_prior
 
-
-def _sibling(name):
-    """A module next to this file (the tests run in importlib mode, without a package)."""
-    import importlib.util
-    import pathlib
-
-    spec = importlib.util.spec_from_file_location(
-        f"_pw_{name}", pathlib.Path(__file__).with_name(f"{name}.py"))
-    module = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(module)
-    return module
-
-
-_structure = _sibling("test_report_structure")  # the same page parser as the binary tests
-_Page, _val = _structure._Page, _structure._val
-
 ACTIONS = ["ship", "repack", "hold"]
 # rows intact / dented / broken; columns ship / repack / hold (invented scenario costs)
 COSTS3 = np.array([[0.0, 4.0, 12.0], [20.0, 4.0, 12.0], [60.0, 64.0, 12.0]])
@@ -61,7 +45,9 @@ def three():
 
 
 @pytest.fixture(scope="module")
-def report(three, tmp_path_factory):
+def report(three, tmp_path_factory, report_page_parser):
+    # the same page parser as the binary tests (tests/test_report_structure.py)
+    _Page = report_page_parser._Page
     path = tmp_path_factory.mktemp("mc") / "report.html"
     content = write_report(
         path, y_true=three["y"], y_prob=three["P"], costs=COSTS3, action_names=ACTIONS,
@@ -90,7 +76,8 @@ def test_sections_figures_and_cautions(report):
     assert "intact" in page.text and "hold" in page.text
 
 
-def test_calibration_numbers_match_library_and_references(three, report):
+def test_calibration_numbers_match_library_and_references(three, report, report_page_parser):
+    _val = report_page_parser._val
     y, P = three["y"], three["P"]
     _, page = report
     ll = _val(page.rows["log_loss"][0])
@@ -121,7 +108,8 @@ def test_calibration_numbers_match_library_and_references(three, report):
         assert np.isclose(_val(page.rows[f"class:{j}"][0]), np.mean(y == j))
 
 
-def test_decision_numbers_match_library(three, report):
+def test_decision_numbers_match_library(three, report, report_page_parser):
+    _val = report_page_parser._val
     y, P = three["y"], three["P"]
     content, page = report
     rows = np.arange(y.shape[0])
@@ -154,7 +142,8 @@ def test_decision_numbers_match_library(three, report):
         assert [_val(v) for v in page.rows[f"cost:{i}"]] == COSTS3[i].tolist()
     # unlabelled rows: expected cost under posteriors moved to the estimated priors
     Q = three["Q"]
-    src, tgt = content.source_prior, content.target_prior
+    # (the shares the evidence gate applies, as PriorShiftWrapper would)
+    src, tgt = content.source_prior, content.applied_prior
     Eq = adjust_to_prior(Q, src, tgt) @ COSTS3
     qb = np.argmin(Q @ COSTS3, axis=1)
     assert np.isclose(_val(page.rows["bayes"][-1]), Eq[np.arange(Q.shape[0]), qb].mean())
@@ -165,7 +154,8 @@ def test_decision_numbers_match_library(three, report):
     assert rows.shape[0] == content.n_rows
 
 
-def test_prior_numbers_match_library(three, report):
+def test_prior_numbers_match_library(three, report, report_page_parser):
+    _val = report_page_parser._val
     y, P, Q = three["y"], three["P"], three["Q"]
     content, page = report
     res = PriorEstimator(n_resamples=0).fit(P, y).estimate(Q)
@@ -184,7 +174,8 @@ def test_prior_numbers_match_library(three, report):
     assert res.shift_pvalue < 0.01
 
 
-def test_report_from_fitted_multiclass_wrappers(three, tmp_path):
+def test_report_from_fitted_multiclass_wrappers(three, tmp_path, report_page_parser):
+    _Page, _val = report_page_parser._Page, report_page_parser._val
     train, test, winter = three["train"], three["test"], three["winter"]
     base = make_pipeline(StandardScaler(), LogisticRegression())
     policy = CostPolicyWrapper(base, costs=COSTS3, strategy="tuned", actions=ACTIONS,
@@ -204,15 +195,17 @@ def test_report_from_fitted_multiclass_wrappers(three, tmp_path):
                                     classes=[0, 1, 2], actions=ACTIONS))
     for j in range(3):
         assert np.isclose(_val(page.rows[f"offset:{j}"][0]), policy.class_offsets_[j])
-        # maximum-likelihood share, its interval, then the shrunk share the wrapper applies
+        # maximum-likelihood share, its interval, the shrunk share, then the share the
+        # wrapper applies after its evidence gate
         assert np.isclose(_val(page.rows[f"prior:{j}"][1]), shift.prior_estimate_.ml_prior[j])
-        assert np.isclose(_val(page.rows[f"prior:{j}"][-1]), shift.target_prior_[j])
+        assert np.isclose(_val(page.rows[f"prior:{j}"][-2]), shift.target_prior_[j])
+        assert np.isclose(_val(page.rows[f"prior:{j}"][-1]), shift.applied_prior_[j])
     assert np.isclose(_val(page.ids["budget-threshold"]["data-value"]),
                       policy.action_budget_.saving_threshold)
     assert content.shift_pvalue == shift.shift_pvalue_
     # the policy's actions on the unlabelled rows, costed under the moved posteriors
     Eq = adjust_to_prior(policy.predict_proba(winter.data), content.source_prior,
-                         content.target_prior) @ COSTS3
+                         shift.applied_prior_) @ COSTS3
     acts = np.array([ACTIONS.index(a) for a in policy.predict(winter.data)])
     assert np.isclose(content.rules[0].target_expected_cost,
                       Eq[np.arange(acts.shape[0]), acts].mean())

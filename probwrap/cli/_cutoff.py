@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import plain
+from .._validation import plain, power_of_two_unit
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
@@ -121,9 +121,22 @@ def cutoff_summary(
     matrix = binary_cost_matrix(costs)
     bounds = (0.0, 1.0) if scale == "proba" else None
     w = np.ones(scores.shape[0]) if sample_weight is None else np.asarray(sample_weight, float)
+    # where a sum of costs over the rows could overflow (costs near the largest float gave inf
+    # costs and JSON that cannot hold inf), every rule and interval below acts on the costs
+    # divided by a power of two near the largest (exact; no choice changes) and costs are
+    # scaled back when reported; ordinary costs are used as given
+    original = matrix
+    top = float(np.abs(matrix).max())
+    unit = 1.0
+    if not np.isfinite(top * 4.0 * max(float(w.sum()), scores.shape[0], 1.0)):
+        unit = power_of_two_unit(matrix)
+        matrix = matrix / unit
 
     def mean(values: np.ndarray) -> float:
         return float(np.average(values, weights=w))
+
+    def mean_cost(values: np.ndarray) -> float:
+        return mean(values) * unit
 
     res = search_cutoff(scores, y, matrix, capacity=capacity, score_bounds=bounds,
                         sample_weight=sample_weight)
@@ -146,15 +159,15 @@ def cutoff_summary(
         "cutoff_interval": None if ci is None else [float(ci.low), float(ci.high)],
         "confidence_level": float(confidence_level),
         "n_resamples": int(n_resamples),
-        "expected_cost": float(res.cost),
+        "expected_cost": float(res.cost) * unit,
         "flagged_share": flagged,
-        "cost_flag_none": mean(matrix[y, 0]),
+        "cost_flag_none": mean_cost(matrix[y, 0]),
         # acting on every row breaks any capacity below 1
-        "cost_flag_all": mean(realised) if capacity in (None, 1.0) else None,
+        "cost_flag_all": mean_cost(realised) if capacity in (None, 1.0) else None,
     }
     if scale == "proba":
         try:
-            bayes = plugin_cutoff(matrix)
+            bayes = plugin_cutoff(original)
         except ValueError:
             bayes = None
         out["bayes_cutoff"] = bayes
@@ -165,7 +178,7 @@ def cutoff_summary(
             action = (scores > cut).astype(np.intp)
             share = mean(action)
             over = capacity is not None and share > capacity
-            out[name] = None if over else mean(matrix[y, action])
+            out[name] = None if over else mean_cost(matrix[y, action])
         out["settled_cutoff"] = None
         if bayes is not None:
             from probwrap.decision import settle_cutoff
@@ -173,7 +186,8 @@ def cutoff_summary(
             settled = settle_cutoff(scores, y, matrix, res, sample_weight=sample_weight)
             out["settled_cutoff"] = {
                 "cutoff": settled.cutoff,
-                "expected_cost": mean(matrix[y, (scores > settled.cutoff).astype(np.intp)]),
+                "expected_cost": mean_cost(
+                    matrix[y, (scores > settled.cutoff).astype(np.intp)]),
                 "is_bayes_cutoff": settled.kept_plugin,
             }
     if guarantee is not None:
@@ -187,7 +201,7 @@ def cutoff_summary(
             "method": g.method,
             "confidence": g.confidence,
             "cutoff": g.cutoff,
-            "expected_cost": g.cost,
+            "expected_cost": g.cost * unit,
             "flagged_share": mean(scores > g.cutoff),
             "achieved": g.achieved,
             "bound": g.bound,

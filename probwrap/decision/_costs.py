@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import plain
+from .._validation import plain, power_of_two_unit
 
 __all__ = [
     "BINARY_COST_KEYS",
@@ -275,12 +275,20 @@ def plugin_cutoff(costs: Any) -> float:
     0.0541
     """
     matrix = check_cost_matrix(costs, n_classes=2, n_actions=2)
-    d_neg = matrix[0, 1] - matrix[0, 0]  # c_fp - c_tn
-    d_pos = matrix[1, 0] - matrix[1, 1]  # c_fn - c_tp
+    with np.errstate(over="ignore"):
+        d_neg = matrix[0, 1] - matrix[0, 0]  # c_fp - c_tn
+        d_pos = matrix[1, 0] - matrix[1, 1]  # c_fn - c_tp
+        total = d_neg + d_pos
     if not (d_neg > 0 and d_pos > 0):
         raise ValueError(
             "`costs` must make each error dearer than the matching correct decision "
             f"(c_fp > c_tn and c_fn > c_tp); got c_fp - c_tn = {d_neg:g} and c_fn - c_tp = "
             f"{d_pos:g}, so one action is never worse and no cutoff separates them."
         )
-    return float(d_neg / (d_neg + d_pos))
+    if not np.isfinite(total):
+        # costs near the largest float (1e308 each made the sum inf and the cutoff 0, not
+        # 0.5): the same ratio on the costs divided by a power of two near the largest (exact)
+        scaled = matrix / power_of_two_unit(matrix)
+        d_neg = scaled[0, 1] - scaled[0, 0]
+        total = d_neg + (scaled[1, 0] - scaled[1, 1])
+    return float(d_neg / total)

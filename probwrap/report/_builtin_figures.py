@@ -8,6 +8,7 @@ the optional ``plot`` extra (matplotlib) is not installed.
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
@@ -41,9 +42,12 @@ def _upper(values: Any, floor: float = 0.0) -> float:
     top = max(float(v.max()) if v.size else 0.0, floor)
     if top <= 0:
         return 1.0
+    if not math.isfinite(top * 1.08):  # near the largest float: no room for a round limit
+        return top
     ticks = nice_ticks(0.0, top * 1.08, target=4)
     step = ticks[1] - ticks[0] if ticks.shape[0] > 1 else top
-    return float(ticks[-1] if ticks[-1] >= top * 1.05 else ticks[-1] + step)
+    upper = float(ticks[-1] if ticks[-1] >= top * 1.05 else ticks[-1] + step)
+    return upper if math.isfinite(upper) else top
 
 
 def reliability_svg(

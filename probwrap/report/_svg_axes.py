@@ -47,7 +47,11 @@ def nice_ticks(low: float, high: float, target: int = 5) -> np.ndarray:
     last = math.floor(high / step + 1e-9)
     ticks = np.arange(first, last + 1) * step
     digits = max(0, -math.floor(math.log10(step)) + (1 if step / power == 2.5 else 0))
-    return np.round(ticks, digits + 2) + 0.0  # + 0.0 turns -0.0 into 0.0
+    # floats of magnitude 2**52 and above have no fraction to round (and rounding them to
+    # decimals multiplies by a power of ten, which overflows for axes near the largest float)
+    whole = np.abs(ticks) >= 2.0**52
+    ticks = np.where(whole, ticks, np.round(np.where(whole, 0.0, ticks), digits + 2))
+    return ticks + 0.0  # + 0.0 turns -0.0 into 0.0
 
 
 def format_ticks(ticks: Any) -> list[str]:
@@ -59,10 +63,19 @@ def format_ticks(ticks: Any) -> list[str]:
     ['0', '0.25', '0.5']
     >>> format_ticks([0, 500, 1000])
     ['0', '500', '1000']
+    >>> format_ticks([0.0, 2e307, 4e307])
+    ['0', '2e+307', '4e+307']
     """
     t = np.asarray(ticks, dtype=float)
     if t.size == 0:
         return []
+    top = float(np.abs(t).max())
+    if top >= 1e7:  # large values in exponent form: as few significant digits as tell them apart
+        tol = 1e-9 * top
+        for digits in range(1, 18):
+            labels = [f"{v:.{digits}g}" for v in t]
+            if np.allclose([float(s) for s in labels], t, rtol=0, atol=tol):
+                return labels
     for digits in range(0, 7):
         labels = [f"{v:.{digits}f}" for v in t]
         tol = 1e-9 * max(1.0, float(np.abs(t).max()))
