@@ -53,7 +53,12 @@ coverage grid is most of it) or
 ``--quick`` (about a minute; fewer repetitions, so coverage is only indicative);
 ``--only=evidence`` (or ``coverage``, ``speed``, ``small``, ``multiclass``) runs one part;
 ``--seed=N`` draws the evidence part's data from another seed (default 0), to check a rule on
-draws it was not chosen on.
+draws it was not chosen on. ``--ceiling`` (about twice the evidence part's time) runs the
+evidence part on the draws of seed N and N + 1 and then prints the design-aware bound (12 bins,
+no-shift limits 1.005, 1.01, 1.02) fitted on all repetitions of one seed and scored on the
+other's, beside in-sample, with its worst no-shift cell; and the default rule's harm budget
+swept (``max_harm`` 0.005-0.05) with a steeper gate (share ``max(0, 1 - (c/T)^2)``) on both
+seeds' draws (mean share closed; worst no-shift ratio).
 
 5. **Multiclass interval** (``--only=multiclass``): coverage at 90 % and 95 % of the default
    interval for three classes — the delta method on the EM fixed point with the labelled rows'
@@ -96,6 +101,14 @@ ALTERNATIVES = (
     ("min_evidence=0.5", 20.0, 0.5, 0.01),
     ("max_harm=0.02", 20.0, 1.0, 0.02),
     ("max_harm=None", 20.0, 1.0, None),
+)
+
+#: The default rule's harm budget swept, and a steeper gate (share ``max(0, 1 - (c/T)^power)``,
+#: no published basis, for the frontier only), on the same draws (name, max_harm, power);
+#: printed with ``--ceiling``.
+GATE_VARIANTS = (
+    *((f"max_harm={h:g}", h, 1.0) for h in (0.005, 0.01, 0.015, 0.02, 0.03, 0.05)),
+    ("steeper gate (c/T)^2", 0.01, 2.0),
 )
 
 
@@ -185,7 +198,48 @@ def design_aware_bound(groups, limit, reps):
     return out
 
 
-def evidence(quick: bool, seed: int = 0) -> None:
+def bound_across_seeds(fit_groups, score_groups, limit):
+    """The design-aware rule fitted on all repetitions of one seed's draws (``fit_groups``) and
+    scored on another seed's (``score_groups``, same design): mean share closed and worst
+    no-shift ratio. Fresh draws measure what the in-sample bound owes to fitting noise."""
+    shares, worst = [], 0.0
+    for key, cells in fit_groups.items():
+        rule = _fit_bin_rule(cells, np.ones(cells[0]["X"].size, bool), limit)
+        for c in score_groups[key]:
+            every = np.ones(c["X"].size, bool)
+            none, ad = c["none"].mean(), _apply_bin_rule(c, every, rule).mean()
+            if c["shift"] == 1.0:
+                worst = max(worst, ad / none)
+            else:
+                shares.append((none - ad) / (none - c["oracle"].mean()))
+    return float(np.mean(shares)), worst
+
+
+def ceiling(quick: bool, seed: int = 0) -> None:
+    """``--ceiling``: the evidence part on the draws of ``seed`` and ``seed + 1``, then the
+    design-aware bound fitted on one seed's draws and scored on the other's, and the default
+    rule's harm budget swept (with a steeper gate) on both."""
+    runs = {s: evidence(quick, s) for s in (seed, seed + 1)}
+    a, b = seed, seed + 1
+    print("Ceiling across seeds: the design-aware bound (12 bins) fitted on all repetitions of "
+          "one seed's draws, scored on the other's (mean share closed; worst no-shift "
+          "adapted/none)")
+    print(f"{'limit':>6} | {f'fit {a}, score {a}':>16} | {f'fit {a}, score {b}':>16} | "
+          f"{f'fit {b}, score {a}':>16} | {f'fit {b}, score {b}':>16}")
+    for limit in (1.005, 1.01, 1.02):
+        cols = [bound_across_seeds(runs[f]["groups"], runs[t]["groups"], limit)
+                for f, t in ((a, a), (a, b), (b, a), (b, b))]
+        print(f"{limit:6.3f} | " + " | ".join(f"{m:7.1%}; {w:6.3f}" for m, w in cols))
+    print("Default rule's harm budget swept, and a steeper gate, on the same draws (mean share "
+          "closed; worst no-shift adapted/none):")
+    print(f"{'rule':>22} | {f'seed {a}':>15} | {f'seed {b}':>15}")
+    for i, (label, *_) in enumerate(GATE_VARIANTS):
+        print(f"{label:>22} | " + " | ".join(
+            f"{runs[s]['gates'][0][i]:6.1%}; {runs[s]['gates'][1][i]:6.3f}" for s in (a, b)))
+    print()
+
+
+def evidence(quick: bool, seed: int = 0) -> dict:
     from probwrap.shift import em_prior
     from probwrap.shift._shift_tests import evidence_cutoff
 
@@ -213,6 +267,7 @@ def evidence(quick: bool, seed: int = 0) -> None:
     integ_worst = np.zeros(2)
     cell_se = []
     bf_closed, bf_worst = [], 0.0
+    gate_closed, gate_worst = [[] for _ in GATE_VARIANTS], np.zeros(len(GATE_VARIANTS))
     groups = {}  # (model, prevalence) -> per-shift draws, for the design-aware bound
 
     def log_loss_at(y_new, none, src, t):
@@ -245,7 +300,7 @@ def evidence(quick: bool, seed: int = 0) -> None:
                     continue
                 err, ll, cover, detect, warned, unwarned = [], [], [], [], 0, 0
                 fixed, cutoffs, ml_est, cr_sd, alt_ll, integ_ll = [], [], [], [], [], []
-                moves_ll, ml_change, bf_ll = [], [], []
+                moves_ll, ml_change, bf_ll, gate_ll = [], [], [], []
                 for _ in range(reps):
                     X, y = gaussian(n_lab, prev, rng, delta)
                     X_new, y_new = gaussian(n_unl, target, rng, delta)
@@ -280,6 +335,15 @@ def evidence(quick: bool, seed: int = 0) -> None:
                             w = max(0.0, 1.0 - c / stat) if stat > 0 else 0.0
                             row.append(log_loss_at(y_new, none, src, src[1] + w * (est - src[1])))
                     alt_ll.append(row)
+                    # the default rule (shrunk estimate) under other harm budgets / gate powers
+                    stat = res.shift_statistic
+                    row = []
+                    for _, harm, power in GATE_VARIANTS:
+                        c = evidence_cutoff(res.null_harm_scale, 1, harm, 1.0)
+                        w = max(0.0, 1.0 - (c / stat) ** power) if stat > 0 else 0.0
+                        row.append(log_loss_at(y_new, none, src,
+                                               src[1] + w * (wrapper.target_prior_[1] - src[1])))
+                    gate_ll.append(row)
                     # a smooth evidence weight: the posterior probability of a shift (equal prior
                     # odds) from the Bayes factor of a normal prior on the change with variance
                     # g s^2, g chosen by local empirical Bayes, g = max(0, T - 1) (George &
@@ -324,6 +388,7 @@ def evidence(quick: bool, seed: int = 0) -> None:
                 m_alt = np.mean(alt_ll, axis=0)
                 m_int = np.mean(integ_ll, axis=0)
                 m_bf = float(np.mean(bf_ll))
+                m_gate = np.mean(gate_ll, axis=0)
                 ratio_none, ratio_oracle = m[1] / m[0], m[1] / m[2]
                 gap = m[0] - m[2]
                 closed = (m[0] - m[1]) / gap if shift != 1.0 and gap > 0 else np.nan
@@ -334,6 +399,7 @@ def evidence(quick: bool, seed: int = 0) -> None:
                     alt_worst = np.maximum(alt_worst, m_alt / m[0])
                     integ_worst = np.maximum(integ_worst, m_int / m[0])
                     bf_worst = max(bf_worst, m_bf / m[0])
+                    gate_worst = np.maximum(gate_worst, m_gate / m[0])
                 else:
                     # standard error of the share closed (ratio of two means over the
                     # repetitions, delta method)
@@ -344,6 +410,8 @@ def evidence(quick: bool, seed: int = 0) -> None:
                     for i in range(2):
                         integ_closed[i].append((m[0] - m_int[i]) / gap)
                     bf_closed.append((m[0] - m_bf) / gap)
+                    for i, v in enumerate(m_gate):
+                        gate_closed[i].append((m[0] - v) / gap)
                     closures.append(closed)
                     gaps.append(gap)
                     gains.append(m[0] - m[1])
@@ -421,6 +489,7 @@ def evidence(quick: bool, seed: int = 0) -> None:
           f"{'' if bf_worst <= 1.02 else '  (breaks the no-shift target)'}")
     print(f"target: no collapse without a warning; measured {silent} -> "
           f"{'met' if silent == 0 else 'MISSED'}\n")
+    return {"groups": groups, "gates": ([float(np.mean(g)) for g in gate_closed], gate_worst)}
 
 
 # -- 4. calibration of the no-shift test on small labelled sets ---------------------------------
@@ -811,7 +880,9 @@ def main(quick: bool = False,
 
     t0 = time.perf_counter()
     print(f"(load average at start: {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores)\n")
-    if "evidence" in parts:
+    if "ceiling" in parts:
+        ceiling(quick, seed)
+    elif "evidence" in parts:
         evidence(quick, seed)
     if "coverage" in parts:
         coverage(quick)
@@ -826,6 +897,8 @@ def main(quick: bool = False,
 
 if __name__ == "__main__":
     chosen = tuple(a[len("--only="):] for a in sys.argv if a.startswith("--only="))
+    if "--ceiling" in sys.argv:
+        chosen = ("ceiling", *chosen)
     seeds = [int(a[len("--seed="):]) for a in sys.argv if a.startswith("--seed=")]
     main(quick="--quick" in sys.argv, seed=seeds[0] if seeds else 0,
          parts=chosen or ("evidence", "coverage", "speed", "small", "multiclass"))
