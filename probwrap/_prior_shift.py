@@ -23,6 +23,39 @@ MIN_CLASS_ROWS = 5
 __all__ = ["PriorShiftWrapper"]
 
 
+def evidence_gate(
+    result: Any, n_classes: int, max_harm: float | None = 0.01, min_evidence: float = 1.0
+) -> tuple[float, float]:
+    """The share of the way to the estimate that :class:`PriorShiftWrapper` moves the prior.
+
+    From a :class:`~probwrap.shift.PriorEstimate` ``result`` (its shift statistic and harm
+    scale): ``(adaptation_weight, evidence_cutoff)`` with ``adaptation_weight = max(0, 1 -
+    evidence_cutoff * (k - 1) / shift_statistic)`` — the rule of ``PriorShiftWrapper.adapt``
+    (``adaptation_weight_``, ``evidence_cutoff_``), for callers that estimate the prior
+    themselves (the report) and must move exactly as the wrapper would.
+
+    Examples
+    --------
+    >>> from probwrap.shift import PriorEstimate
+    >>> res = PriorEstimate(prior=[0.8, 0.2], method="em", n_iter=1, converged=True,
+    ...                     n_rows=100, shift_statistic=4.0, null_harm_scale=0.0)
+    >>> evidence_gate(res, 2)
+    (0.75, 1.0)
+    """
+    stat = result.shift_statistic
+    cutoff = evidence_cutoff(
+        getattr(result, "null_harm_scale", None), n_classes - 1, max_harm, float(min_evidence)
+    )
+    threshold = cutoff * (n_classes - 1)
+    if not getattr(result, "identified", True) or stat is None or not np.isfinite(stat):
+        weight = 0.0
+    elif threshold == 0:
+        weight = 1.0
+    else:
+        weight = max(0.0, 1.0 - threshold / stat) if stat > 0 else 0.0
+    return float(weight), float(cutoff)
+
+
 class PriorShiftWrapper(HeldOutClassifierBase):
     """Correct a classifier's probabilities for a change of class priors (prior / label shift).
 
@@ -424,11 +457,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         multiclass = self.classes_.shape[0] > 2
         if multiclass and (_is_dask(X) or _is_dask(sample_weight)):
             # Multiclass Dask rows: EM / BBSE as reductions over the calibrated posteriors on
-            # the workers (one pass per EM iteration); a point estimate, no interval.
+            # the workers (one pass per EM iteration); with the analytic interval (EM).
             from .scale._entry import estimate_multiclass_target
 
             res = estimate_multiclass_target(est, self.estimator_, X, sample_weight)
-            return self._finish_adapt(res, None)
+            return self._finish_adapt(res, res.interval)
         if _is_dask(X) or _is_dask(sample_weight):
             # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is
             # estimated from the tally's weighted rows. Bootstrapping tally rows would not
@@ -463,18 +496,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.shift_statistic_ = res.shift_statistic
         self.n_dropped_resamples_ = int(getattr(res, "n_dropped", 0))
         k = self.classes_.shape[0]
-        stat = res.shift_statistic
-        cutoff = evidence_cutoff(
-            getattr(res, "null_harm_scale", None), k - 1, self.max_harm, float(self.min_evidence)
-        )
+        weight, cutoff = evidence_gate(res, k, self.max_harm, self.min_evidence)
         self.evidence_cutoff_ = float(cutoff)
-        threshold = cutoff * (k - 1)
-        if not getattr(res, "identified", True) or stat is None or not np.isfinite(stat):
-            weight = 0.0
-        elif threshold == 0:
-            weight = 1.0
-        else:
-            weight = max(0.0, 1.0 - threshold / stat) if stat > 0 else 0.0
         self.adaptation_weight_ = float(weight)
         self.shift_detected_ = bool(weight > 0)
         self._warn_uninformative(interval, getattr(res, "identified", True))

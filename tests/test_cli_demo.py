@@ -4,6 +4,7 @@ import html.parser
 import subprocess
 import sys
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -66,7 +67,65 @@ def test_demo_in_process_summary(tmp_path, capsys):
     line = next(t for t in text.splitlines() if "winter prevalence (est.)" in t)
     summer = float(next(t for t in text.splitlines() if "summer prevalence" in t).split()[-1])
     assert float(line.split()[3]) > summer  # winter damage roughly doubles
+    # the printed interval is the maximum-likelihood estimate's own: it contains that estimate
+    lo, hi = (float(v) for v in line.split("[")[1].split("]")[0].split(","))
+    assert lo <= float(line.split()[3]) <= hi
+    assert any(t.strip().startswith("shrunk toward summer") for t in text.splitlines())
     assert (tmp_path / "report.html").stat().st_size > 20_000
+
+
+def _prevalence_content(**kw):
+    from types import SimpleNamespace
+
+    base = dict(confidence_level=0.95, source_prevalence=0.05, ml_prevalence=0.0912,
+                ml_interval=(0.0701, 0.1133), target_prevalence=0.0650,
+                target_interval=(0.0650, 0.1133), applied_prevalence=0.0575,
+                adaptation_weight=0.5)
+    base.update(kw)
+    return SimpleNamespace(**base)
+
+
+def test_demo_prints_each_estimate_with_its_own_interval():
+    # The shrunk estimate (0.0650) lies outside the maximum-likelihood estimate's interval; the
+    # widened interval [0.0650, 0.1133] belongs to neither estimate and is not printed. The
+    # maximum-likelihood estimate is printed with its own interval, the shrunk value and the
+    # prevalence the rules apply (the source moved half the way: 0.05 + 0.5 * 0.015) on their
+    # own lines.
+    from probwrap.cli._demo import prevalence_lines
+
+    lines = prevalence_lines(_prevalence_content(), 0.1)
+    first = lines[0].split()
+    assert first[3] == "0.0912" and "[0.0701, 0.1133]" in lines[0]
+    assert "0.0650" not in lines[0]
+    assert lines[1].split()[3] == "0.0650" and "outside the interval" in lines[1]
+    assert lines[2].split()[4] == "0.0575" and "50%" in lines[2]
+    assert not any("[0.0650" in t for t in lines)
+    # inside the interval: no warning; no evidence: the rules do not move
+    lines = prevalence_lines(_prevalence_content(target_prevalence=0.08, adaptation_weight=0.0,
+                                                 applied_prevalence=0.05), 0.1)
+    assert "outside" not in lines[1]
+    assert lines[2].split()[4] == "0.0500" and "not moved" in lines[2]
+
+
+def test_three_way_demo_prints_each_estimate_with_its_own_interval():
+    from types import SimpleNamespace
+
+    from probwrap.cli._demo import share_lines
+
+    c = SimpleNamespace(
+        confidence_level=0.9, class_names=("intact", "dented", "broken"),
+        source_prior=np.array([0.8, 0.15, 0.05]), ml_prior=np.array([0.7, 0.2, 0.1]),
+        ml_interval=np.array([[0.66, 0.74], [0.17, 0.23], [0.08, 0.12]]),
+        target_prior=np.array([0.72, 0.19, 0.09]),
+        target_interval=np.array([[0.66, 0.74], [0.17, 0.23], [0.08, 0.12]]),
+        applied_prior=np.array([0.76, 0.17, 0.07]), adaptation_weight=0.5)
+    lines = share_lines(c, [0.7, 0.2, 0.1])
+    assert "90% interval" in lines[0] and "shrunk" in lines[0] and "applied" in lines[0]
+    row = lines[3].split()
+    assert row[:3] == ["broken", "0.0500", "0.1000"]
+    assert lines[3].count("[0.0800, 0.1200]") == 1
+    assert row[5:7] == ["0.0900", "0.0700"]
+    assert "50%" in lines[-1]
 
 
 def test_demo_usage_error_exit_2(capsys):
@@ -107,6 +166,7 @@ def test_report_verb_good_files(score_files, tmp_path, capsys, name):
     ref = search_cutoff(good["risk"].to_numpy(), good["damaged"].to_numpy(),
                         {"fp": 3.0, "fn": 40.0}, capacity=0.3, score_bounds=(0, 1))
     assert f"cutoff {ref.cutoff:.4f}" in msg
+    assert "applied by the rules" in msg  # the prevalence after the wrapper's evidence gate
     page = _parse(out)
     assert page.figures == ["fig-reliability", "fig-cost", "fig-decision-curve", "fig-prevalence",
                             "fig-alarm"]

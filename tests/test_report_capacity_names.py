@@ -62,9 +62,11 @@ def test_multiclass_recommendation_offers_the_capacity_respecting_rule(shifted):
     r = c.recommendation
     q = kw["unlabelled_prob"]
     assert r.key == "capacity" and r.basis == "unlabelled" and r.within_capacity is True
-    # recomputed: Bayes actions on the posteriors moved to the estimated class shares, the
-    # "hold" action filled up to 3% of the unlabelled rows by saving
-    E = expected_costs(adjust_to_prior(q, c.source_prior, c.target_prior), MATRIX)
+    # recomputed: Bayes actions on the posteriors moved to the class shares the evidence gate
+    # applies (as PriorShiftWrapper would), the "hold" action filled up to 3% of the
+    # unlabelled rows by saving
+    assert 0 < c.adaptation_weight <= 1
+    E = expected_costs(adjust_to_prior(q, c.source_prior, c.applied_prior), MATRIX)
     budget = fit_action_budget(E, 2, CAP)
     acts = budget_actions(E, 2, budget.saving_threshold)
     shares = np.bincount(acts, minlength=3) / q.shape[0]

@@ -142,7 +142,8 @@ def test_decision_numbers_match_library(three, report, report_page_parser):
         assert [_val(v) for v in page.rows[f"cost:{i}"]] == COSTS3[i].tolist()
     # unlabelled rows: expected cost under posteriors moved to the estimated priors
     Q = three["Q"]
-    src, tgt = content.source_prior, content.target_prior
+    # (the shares the evidence gate applies, as PriorShiftWrapper would)
+    src, tgt = content.source_prior, content.applied_prior
     Eq = adjust_to_prior(Q, src, tgt) @ COSTS3
     qb = np.argmin(Q @ COSTS3, axis=1)
     assert np.isclose(_val(page.rows["bayes"][-1]), Eq[np.arange(Q.shape[0]), qb].mean())
@@ -194,15 +195,17 @@ def test_report_from_fitted_multiclass_wrappers(three, tmp_path, report_page_par
                                     classes=[0, 1, 2], actions=ACTIONS))
     for j in range(3):
         assert np.isclose(_val(page.rows[f"offset:{j}"][0]), policy.class_offsets_[j])
-        # maximum-likelihood share, its interval, then the shrunk share the wrapper applies
+        # maximum-likelihood share, its interval, the shrunk share, then the share the
+        # wrapper applies after its evidence gate
         assert np.isclose(_val(page.rows[f"prior:{j}"][1]), shift.prior_estimate_.ml_prior[j])
-        assert np.isclose(_val(page.rows[f"prior:{j}"][-1]), shift.target_prior_[j])
+        assert np.isclose(_val(page.rows[f"prior:{j}"][-2]), shift.target_prior_[j])
+        assert np.isclose(_val(page.rows[f"prior:{j}"][-1]), shift.applied_prior_[j])
     assert np.isclose(_val(page.ids["budget-threshold"]["data-value"]),
                       policy.action_budget_.saving_threshold)
     assert content.shift_pvalue == shift.shift_pvalue_
     # the policy's actions on the unlabelled rows, costed under the moved posteriors
     Eq = adjust_to_prior(policy.predict_proba(winter.data), content.source_prior,
-                         content.target_prior) @ COSTS3
+                         shift.applied_prior_) @ COSTS3
     acts = np.array([ACTIONS.index(a) for a in policy.predict(winter.data)])
     assert np.isclose(content.rules[0].target_expected_cost,
                       Eq[np.arange(acts.shape[0]), acts].mean())

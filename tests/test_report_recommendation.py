@@ -50,7 +50,9 @@ def test_capacity_breaking_move_offers_the_capacity_cutoff(shifted):
     p, y, q, c, page = shifted
     r = c.recommendation
     assert c.shift_pvalue < 0.01
-    src, tgt = c.source_prevalence, c.target_prevalence
+    # the prevalence the rules move to: the wrapper's evidence gate applied to the estimate
+    assert 0 < c.adaptation_weight <= 1
+    src, tgt = c.source_prevalence, c.applied_prevalence
     moved = float(shift_cutoff(r.base_cutoff, src, tgt))
     # the base rule is the settled cutoff of the labelled rows (the tuned policy's rule)
     ref = settle_cutoff(p, y, COSTS, search_cutoff(p, y, MATRIX, capacity=0.25,

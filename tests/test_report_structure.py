@@ -5,6 +5,7 @@ import html.parser
 import numpy as np
 import pytest
 
+from probwrap._prior_shift import evidence_gate
 from probwrap.datasets import make_parcels
 from probwrap.decision import cutoff_interval, plugin_cutoff, realised_cost, search_cutoff
 from probwrap.metrics import bootstrap_interval, brier_score, expected_calibration_error, log_loss
@@ -189,9 +190,14 @@ def test_prevalence_numbers_match_library(scenario, report):
     assert np.isclose(_val(page.rows["target"][0]), res.prior[1], atol=1e-6)
     assert np.isclose(_val(page.rows["shift_pvalue"][0]), res.shift_pvalue, rtol=1e-6)
     assert _val(page.rows["target_low"][0]) < res.prior[1] < _val(page.rows["target_high"][0])
+    # the cutoff moves as PriorShiftWrapper moves its predictions: to the source prevalence
+    # moved adaptation_weight of the way to the estimate (its evidence gate)
+    weight, _ = evidence_gate(res, 2)
+    applied = y.mean() + weight * (res.prior[1] - y.mean())
+    assert np.isclose(_val(page.rows["applied"][0]), applied, atol=1e-9)
     assert np.isclose(
         _val(page.rows["adapted_cutoff"][0]),
-        shift_cutoff(content.chosen_cutoff, y.mean(), res.prior[1]),
+        shift_cutoff(content.chosen_cutoff, y.mean(), applied),
     )
     assert res.prior[1] > y.mean()  # winter: damage roughly doubles
 

@@ -160,18 +160,14 @@ def test_multiclass_dask_one_vs_rest_with_an_absent_class(client, model):
     assert p.min() > 0 and p.max() < 1
 
 
-def test_multiclass_dask_uses_the_same_harm_cutoff_as_in_memory():
+def test_multiclass_dask_uses_the_same_harm_cutoff_as_in_memory(client):
     # A weak three-class model with a small class: the max_harm rule raises the evidence cutoff
     # above min_evidence, on Dask input as in memory. Consistency test against the in-memory
     # wrapper on the same rows (same sums, so agreement to rounding; 1e-6 relative allows for
-    # the order of the block sums and the EM / Newton tolerances). The weak model's EM takes
-    # about 300 reductions per estimate; they run on Dask's threaded scheduler here (the
-    # arithmetic is the same; the cluster itself is exercised by the other tests of this file),
-    # which keeps this test at a few seconds instead of half a minute.
-    import dask
-
-    with dask.config.set(scheduler="threads"):
-        _check_harm_cutoff_on_dask()
+    # the order of the block sums and the EM / Newton tolerances). Plain EM took about 600
+    # reductions per estimate here (half a minute on the cluster, so this test ran on Dask's
+    # threaded scheduler); the SQUAREM-accelerated EM takes a few dozen, on the cluster.
+    _check_harm_cutoff_on_dask()
 
 
 def _check_harm_cutoff_on_dask():
@@ -198,6 +194,8 @@ def _check_harm_cutoff_on_dask():
     assert remote.evidence_cutoff_ == pytest.approx(local.evidence_cutoff_, rel=1e-6)
     assert remote.adaptation_weight_ == pytest.approx(local.adaptation_weight_, abs=1e-6)
     np.testing.assert_allclose(remote.applied_prior_, local.applied_prior_, atol=1e-6)
+    # the accelerated EM runs on Dask too (plain EM: about 600 passes)
+    assert remote.prior_estimate_.converged and remote.prior_estimate_.n_iter < 60
     # and max_harm=None falls back to min_evidence on both paths
     plain = PriorShiftWrapper(weak, max_harm=None, **kw).fit(
         da.from_array(X, chunks=(1000, 2)), da.from_array(y, chunks=1000)
@@ -322,3 +320,35 @@ def _check_floor_on_dask(kind, weights):
     fixed = BiasCorrectedScaling(kind="temperature").fit_log_proba(
         proba_to_log_proba(p, clip=1e-12), y, w)
     assert abs(fixed.scale_[0] - local.calibrator_.scale_[0]) > 1e-3
+
+
+@pytest.mark.parametrize("calibration", ["vector", None])
+def test_multiclass_dask_interval_equals_the_in_memory_interval(model, calibration):
+    # Consistency test: the analytic interval of the EM prior (delta method with the labelled
+    # rows' sandwich covariance; its derivatives are checked against SciPy in
+    # tests/test_prior_shift_analytic.py) from per-block sums on Dask equals the in-memory one
+    # on the same rows and weights. The sums only change order, and the maximum-likelihood EM
+    # on Dask stops on the same distance bound (em_tol 1e-10 here), so 1e-8 absolute. The
+    # reductions run on Dask's threaded scheduler (same arithmetic; the cluster is exercised
+    # by the file's other tests), which keeps this test well under a second.
+    import dask
+
+    X, y = _data(1500, 1, [0.5, 0.3, 0.2])
+    X_new, _ = _data(1200, 2, [0.2, 0.3, 0.5])
+    w = np.random.default_rng(3).uniform(0.5, 2.0, X_new.shape[0])
+    kw = dict(calibration=calibration, em_tol=1e-10)
+    with dask.config.set(scheduler="threads"):
+        remote = PriorShiftWrapper(model, **kw).fit(
+            da.from_array(X, chunks=(500, 2)), da.from_array(y, chunks=500)
+        ).adapt(da.from_array(X_new, chunks=(400, 2)), sample_weight=da.from_array(w, chunks=400))
+    local = PriorShiftWrapper(model, **kw).fit(X, y).adapt(X_new, sample_weight=w)
+    np.testing.assert_allclose(remote.target_prior_interval_, local.target_prior_interval_,
+                               atol=1e-8)
+    np.testing.assert_allclose(remote.prior_estimate_.ml_prior, local.prior_estimate_.ml_prior,
+                               atol=1e-8)
+    np.testing.assert_allclose(remote.prior_estimate_.ml_interval,
+                               local.prior_estimate_.ml_interval, atol=1e-8)
+    # a real interval: each share's is narrower than [0, 1] and contains the estimate
+    iv = remote.target_prior_interval_
+    assert np.all(iv[:, 1] - iv[:, 0] < 0.3)
+    assert np.all((iv[:, 0] <= remote.target_prior_) & (remote.target_prior_ <= iv[:, 1]))

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import time
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -210,6 +211,34 @@ def run_three_way_demo(
     }
 
 
+def share_lines(c: Any, true_shares: Any) -> list[str]:
+    """The winter class shares as the report shows them: the maximum-likelihood estimate with
+    its own interval, then the shrunk estimate and the shares the rules move to."""
+    level = f"{c.confidence_level:.0%}"
+    ml, iv = c.ml_prior, c.ml_interval
+    if ml is None:  # not EM: one estimate, with its interval
+        ml, iv = c.target_prior, c.target_interval
+    applied = c.applied_prior if getattr(c, "adaptation_weight", None) is not None else None
+    head = (f"  {'class':<12}{'summer':>10}{'winter (ML)':>13}{level + ' interval':>22}"
+            + (f"{'shrunk':>9}" if c.ml_prior is not None else "")
+            + (f"{'applied':>9}" if applied is not None else "")
+            + f"{'true share in the invented sample':>36}")
+    lines = [head]
+    for j, name in enumerate(c.class_names):
+        span = f"[{iv[j, 0]:.4f}, {iv[j, 1]:.4f}]" if iv is not None else ""
+        lines.append(
+            f"  {name:<12}{c.source_prior[j]:>10.4f}{ml[j]:>13.4f}{span:>22}"
+            + (f"{c.target_prior[j]:>9.4f}" if c.ml_prior is not None else "")
+            + (f"{applied[j]:>9.4f}" if applied is not None else "")
+            + f"{true_shares[j]:>36.4f}")
+    if applied is not None:
+        w = c.adaptation_weight
+        lines.append("  (shrunk: toward the summer shares; applied: what the rules use, "
+                     + ("not moved: too little evidence of a shift)" if w <= 0 else
+                        f"moved {100 * w:.0f}% of the way by the evidence)"))
+    return lines
+
+
 def _three_way_handler(args: argparse.Namespace) -> int:
     start = time.perf_counter()
     check_writable(args.out, folder=True)
@@ -229,16 +258,37 @@ def _three_way_handler(args: argparse.Namespace) -> int:
     for r in c.rules:
         shares = "".join(f"{100 * s:>8.1f}%" for s in r.shares)
         print(f"  {r.label:<58}{r.mean_cost:>12.3f}{shares}")
-    print(f"  {'class':<12}{'summer':>10}{'winter (est.)':>16}{'interval':>22}"
-          f"{'true share in the invented sample':>36}")
-    for j, name in enumerate(c.class_names):
-        iv = c.target_interval[j] if c.target_interval is not None else (np.nan, np.nan)
-        print(f"  {name:<12}{c.source_prior[j]:>10.4f}{c.target_prior[j]:>16.4f}"
-              f"{f'[{iv[0]:.4f}, {iv[1]:.4f}]':>22}{result['true_winter_shares'][j]:>36.4f}")
+    for line in share_lines(c, result["true_winter_shares"]):
+        print(line)
     print(f"  shift test p-value            {c.shift_pvalue:.3g}")
     print(f"  report                        {result['report']}  "
           f"({time.perf_counter() - start:.1f} s)")
     return 0
+
+
+def prevalence_lines(c: Any, true_share: float) -> list[str]:
+    """The winter prevalence as the report shows it: the maximum-likelihood estimate with its
+    own interval, the shrunk estimate on its own line (never beside an interval widened to
+    reach it), and the prevalence the rules move to after the evidence gate."""
+    level = f"{c.confidence_level:.0%}"
+    truth = f"(true share in the invented sample {true_share:.4f})"
+    ml, iv = c.ml_prevalence, c.ml_interval
+    if ml is None:  # not EM: one estimate, with its interval
+        iv = c.target_interval
+        ml = c.target_prevalence
+    span = f"  [{iv[0]:.4f}, {iv[1]:.4f}] ({level})" if iv is not None else ""
+    lines = [f"  winter prevalence (est.)   {ml:.4f}{span}  maximum likelihood  {truth}"]
+    if c.ml_prevalence is not None:
+        outside = iv is not None and not iv[0] <= c.target_prevalence <= iv[1]
+        lines.append(f"  shrunk toward summer       {c.target_prevalence:.4f}"
+                     + ("  (outside the interval: a cautious value, not an estimate)"
+                        if outside else ""))
+    weight = getattr(c, "adaptation_weight", None)
+    if weight is not None and c.applied_prevalence is not None:
+        moved = ("not moved: too little evidence of a shift" if weight <= 0 else
+                 f"moved {100 * weight:.0f}% of the way by the evidence")
+        lines.append(f"  applied by the rules       {c.applied_prevalence:.4f}  ({moved})")
+    return lines
 
 
 def _handler(args: argparse.Namespace) -> int:
@@ -268,9 +318,8 @@ def _handler(args: argparse.Namespace) -> int:
             r = rules[key]
             print(f"  {r.label:<34}{r.mean_cost:>12.3f}{100 * r.flagged_share:>10.1f}%")
     print(f"  summer prevalence          {c.source_prevalence:.4f}")
-    ti = c.target_interval
-    print(f"  winter prevalence (est.)   {c.target_prevalence:.4f}  [{ti[0]:.4f}, {ti[1]:.4f}]"
-          f"  (true share in the invented sample {result['true_winter_prevalence']:.4f})")
+    for line in prevalence_lines(c, result["true_winter_prevalence"]):
+        print(line)
     print(f"  shift test p-value         {c.shift_pvalue:.3g}")
     if c.adapted_cutoff is not None:
         print(f"  winter cutoff              {c.adapted_cutoff:.4f}")

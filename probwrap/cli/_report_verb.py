@@ -422,6 +422,11 @@ def _handler(args: argparse.Namespace) -> int:
                        shift_pvalue=float(content.shift_pvalue))
         line += (f", prevalence {content.source_prevalence:.4f} -> "
                  f"{content.target_prevalence:.4f} (shift p = {content.shift_pvalue:.3g})")
+        if content.applied_prevalence is not None and content.adaptation_weight is not None:
+            # what the rules move to: the wrapper's evidence gate on that estimate
+            summary.update(applied_prevalence=float(content.applied_prevalence),
+                           adaptation_weight=float(content.adaptation_weight))
+            line += f", applied by the rules {content.applied_prevalence:.4f}"
     line += promise_summary(content, summary)
     _print_summary(args, line, summary)
     return 0

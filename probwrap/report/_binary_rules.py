@@ -196,7 +196,12 @@ def recommend(content, y01, p, w, q, E, notes) -> None:
     base_cutoff = cutoff
     if q is not None and E is not None and content.shift_pvalue is not None:
         src, tgt = content.source_prevalence, content.target_prevalence
-        if kept and content.shift_pvalue < 0.01:
+        # the wrapper's evidence gate decides whether and how far the prevalence moves
+        # (PriorShiftWrapper.adaptation_weight_); the test's p-value alone does not
+        weight = content.adaptation_weight
+        applied = content.applied_prevalence
+        moves = weight is not None and weight > 0 and applied is not None
+        if kept and moves:
             if promise.requirement in ("recall", "false_positive_rate"):
                 reasons.append(f"The prevalence of the unlabelled rows is estimated at {tgt:.4f} "
                                f"against {src:.4f}; the cutoff is not moved: under a change of "
@@ -209,20 +214,24 @@ def recommend(content, y01, p, w, q, E, notes) -> None:
                                "of a fixed cutoff changes with the prevalence, so the "
                                "certificate from the labelled rows does not carry over: "
                                "certify again on labelled rows of the new period.")
-        elif content.shift_pvalue < 0.01 and 0 < cutoff < 1:
-            cutoff = float(shift_cutoff(cutoff, src, tgt))
+        elif moves and 0 < cutoff < 1 and 0 < applied < 1:
+            cutoff = float(shift_cutoff(cutoff, src, applied))
             key = "adapted" if key == "chosen" else key + "_adapted"
-            name = f"{name}, moved to the estimated prevalence"
+            name = f"{name}, moved to the applied prevalence"
+            share = ("all" if weight >= 1.0 else f"{100 * weight:.0f}%")
             reasons.append(f"The prevalence of the unlabelled rows is estimated at {tgt:.4f} "
                            f"against {src:.4f} in the labelled rows (shift test p = "
-                           f"{content.shift_pvalue:.2g}), so the cutoff is moved to it "
-                           f"(Saerens et al. 2002): {cutoff:.4f}.")
+                           f"{content.shift_pvalue:.2g}); the evidence moves it {share} of the "
+                           f"way there, to {applied:.4f}, as PriorShiftWrapper would, and the "
+                           f"cutoff is moved to that prevalence (Saerens et al. 2002): "
+                           f"{cutoff:.4f}.")
             if key not in rows:
                 content.rules.insert(2, rule_row(key, name, cutoff, y01, p, matrix,
                                                   content.sample_weight, cap))
         else:
-            reasons.append("The shift test does not reject an unchanged prevalence at the 1% "
-                           "level, so the cutoff is not moved.")
+            reasons.append("The shift test's evidence is below the cutoff at which "
+                           "PriorShiftWrapper moves the prevalence (shift test p = "
+                           f"{content.shift_pvalue:.2g}), so the cutoff is not moved.")
         basis = "unlabelled"
     acting = q if basis == "unlabelled" else p
     acting_w = None if basis == "unlabelled" else content.sample_weight

@@ -26,6 +26,7 @@ __all__ = [
     "as_positive_proba",
     "as_proba_2d",
     "class_index",
+    "gated_prior",
     "metric_row",
     "FIGURE_NAMES",
     "draw_figure",
@@ -280,3 +281,18 @@ def metric_row(notes: NoteLog, key: str, label: str, fn: Any, y: np.ndarray, p: 
     corrected = 2.0 * value - float(np.median(res.bootstrap_distribution))
     return MetricRow(key, label, max(corrected, 0.0), max(low, 0.0), max(high, 0.0), ideal,
                      interval_method="basic, bias-corrected", plain_value=value)
+
+
+def gated_prior(res: Any, source_prior: Any, index: int | None = None) -> tuple[float, Any]:
+    """``(adaptation_weight, applied prior)`` of an estimate ``res`` under the evidence gate of
+    :class:`~probwrap.PriorShiftWrapper` at its default settings (``max_harm``,
+    ``min_evidence``): the source prior moved that share of the way to ``res.prior`` and
+    renormalised, as ``PriorShiftWrapper.applied_prior_``; ``index`` picks one share."""
+    from .._prior_shift import PriorShiftWrapper, evidence_gate
+
+    src = np.asarray(source_prior, dtype=float)
+    defaults = PriorShiftWrapper(None)
+    weight, _ = evidence_gate(res, src.shape[0], defaults.max_harm, defaults.min_evidence)
+    moved = src + weight * (np.asarray(res.prior, dtype=float) - src) if weight > 0 else src
+    moved = moved / moved.sum()
+    return weight, (moved if index is None else float(moved[index]))

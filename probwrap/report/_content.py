@@ -52,6 +52,7 @@ from ._common import (
     Recommendation,
     ReportNote,
     as_positive_proba,
+    gated_prior,
     metric_row,
 )
 from ._fast_metrics import FAST_BOOTSTRAP_ROWS, fast_metric_rows
@@ -105,6 +106,10 @@ class ReportContent:
     shift_pvalue: float | None = None
     n_unlabelled: int = 0
     adapted_cutoff: float | None = None
+    #: the prevalence the wrapper's evidence gate applies (``PriorShiftWrapper.applied_prior_``:
+    #: the source prevalence moved ``adaptation_weight`` of the way to ``target_prevalence``)
+    applied_prevalence: float | None = None
+    adaptation_weight: float | None = None
     batch_table: np.ndarray | None = None
     prior_method: str = "em"
     confidence_level: float = 0.95
@@ -385,6 +390,8 @@ def collect_content(
         content.prior_method = prior_shift.method
         _maximum_likelihood(content, getattr(prior_shift, "prior_estimate_", None),
                             getattr(prior_shift, "prior_strength", None))
+        content.applied_prevalence = float(prior_shift.applied_prior_[1])
+        content.adaptation_weight = float(prior_shift.adaptation_weight_)
         if X_unlabelled is not None and batch_size is not None:
             step("prevalence by batch", 3)
             content.batch_table = notes.compute(
@@ -405,6 +412,8 @@ def collect_content(
         content.shift_statistic = float(est_res.shift_statistic)
         content.shift_pvalue = float(est_res.shift_pvalue)
         _maximum_likelihood(content, est_res, est.prior_strength)
+        content.adaptation_weight, content.applied_prevalence = gated_prior(
+            est_res, est.source_prior_, 1)
         if batch_size is not None:
             step("prevalence by batch", 3)
             content.batch_table = notes.compute(
@@ -421,17 +430,19 @@ def collect_content(
             content.source_prevalence, confidence_level=confidence_level,
             expected=(ValueError,), **settings)
     E = None
-    if content.target_prevalence is not None and content.chosen_cutoff is not None:
+    if content.applied_prevalence is not None and content.chosen_cutoff is not None:
+        # moved as the wrapper moves its predictions: to the prevalence its evidence gate
+        # applies (none of the way without evidence of a shift), not to the estimate itself
         src = content.source_prevalence
-        tgt = content.target_prevalence
+        tgt = content.applied_prevalence
         if 0 < src < 1 and 0 < tgt < 1 and 0 < content.chosen_cutoff < 1:
             content.adapted_cutoff = float(shift_cutoff(content.chosen_cutoff, src, tgt))
             if q is not None and content.cost_matrix is not None:
                 content.rules.insert(1, rule_row(
-                    "adapted", f"{chosen_name}, moved to the estimated prevalence",
+                    "adapted", f"{chosen_name}, moved to the applied prevalence",
                     content.adapted_cutoff, y01, p, content.cost_matrix, w, cap))
                 # every rule acts on the unadjusted probabilities q; its expected cost on the
-                # unlabelled rows uses the posteriors adjusted to the estimated prevalence
+                # unlabelled rows uses the posteriors adjusted to the applied prevalence
                 q_adj = adjust_to_prior(np.column_stack([1.0 - q, q]), [1 - src, src],
                                         [1 - tgt, tgt])
                 E = ScaledCosts(expected_costs(q_adj, content.cost_matrix / cost_scale(

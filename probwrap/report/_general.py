@@ -32,6 +32,7 @@ from ._common import (
     ReportNote,
     as_proba_2d,
     class_index,
+    gated_prior,
     metric_row,
 )
 from ._general_rules import (
@@ -78,6 +79,11 @@ class MulticlassReportContent:
     ml_prior: np.ndarray | None = None
     ml_interval: np.ndarray | None = None
     prior_strength: float | None = None
+    #: the shares the wrapper's evidence gate applies (``PriorShiftWrapper.applied_prior_``:
+    #: the source shares moved ``adaptation_weight`` of the way to ``target_prior``); the
+    #: rules move to these
+    applied_prior: np.ndarray | None = None
+    adaptation_weight: float | None = None
     shift_statistic: float | None = None
     shift_pvalue: float | None = None
     n_unlabelled: int = 0
@@ -241,6 +247,8 @@ def collect_general_content(
         content.prior_method = str(prior_shift.method)
         _maximum_likelihood(content, getattr(prior_shift, "prior_estimate_", None),
                             getattr(prior_shift, "prior_strength", None))
+        content.applied_prior = np.asarray(prior_shift.applied_prior_, dtype=float)
+        content.adaptation_weight = float(prior_shift.adaptation_weight_)
     elif q is not None:
         est = PriorEstimator(n_resamples=n_resamples, confidence_level=confidence_level,
                              random_state=int(rng.randint(2**31 - 1)))
@@ -252,8 +260,9 @@ def collect_general_content(
         content.shift_statistic = float(res.shift_statistic)
         content.shift_pvalue = float(res.shift_pvalue)
         _maximum_likelihood(content, res, est.prior_strength)
-    if (content.target_prior is not None and q is not None and matrix is not None
-            and np.all(content.source_prior > 0) and np.all(content.target_prior > 0)):
+        content.adaptation_weight, content.applied_prior = gated_prior(res, est.source_prior_)
+    if (content.applied_prior is not None and q is not None and matrix is not None
+            and np.all(content.source_prior > 0) and np.all(content.applied_prior > 0)):
         general_target_columns(content, proba, y_index, w, rule_costs, q, rule_fns,
                                X_unlabelled, policy is not None)
     if content.rules:

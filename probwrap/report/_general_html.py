@@ -15,8 +15,10 @@ from ._html_parts import (
     _text,
     ece_note,
     figure_to_svg,
+    gate_sentence,
     metric_rows_html,
     notes_box,
+    share_of_way,
 )
 from ._promises import late_label_html
 
@@ -221,11 +223,16 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
     strength = getattr(c, "prior_strength", None)
     pull = (f"as if {strength:g} labelled rows at the source shares were added"
             if strength is not None else "toward the source shares")
+    applied = getattr(c, "applied_prior", None)
+    weight = getattr(c, "adaptation_weight", None)
+    if weight is None:
+        applied = None
     rows = "".join(
         f'<tr data-item="prior:{j}"><td>{_text(name)}</td>{_num(c.source_prior[j])}'
         f"{_num(ml[j] if both else c.target_prior[j])}"
         + (f"{_num(iv[j, 0])}{_num(iv[j, 1])}" if iv is not None else "")
         + (f"{_num(c.target_prior[j])}" if both else "")
+        + (f"{_num(applied[j])}" if applied is not None else "")
         + "</tr>"
         for j, name in enumerate(c.class_names)
     )
@@ -234,8 +241,10 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         + (f"<th>estimated target share, maximum likelihood ({_text(c.prior_method)})</th>"
            if both else f"<th>estimated target share ({_text(c.prior_method)})</th>")
         + (f"<th>{level} low</th><th>{level} high</th>" if iv is not None else "")
-        + (f"<th>shrunk toward the source shares ({pull}); used by the rules</th>"
-           if both else "")
+        + (f"<th>shrunk toward the source shares ({pull})</th>" if both else "")
+        + ("<th>applied by the rules (the source shares moved "
+           f"{share_of_way(weight)} of the way to the estimate)</th>"
+           if applied is not None else "")
         + f"</tr></thead><tbody>{rows}"
         f'<tr data-item="shift_statistic"><td>shift test statistic (score test, on the '
         f"chi-square scale, {c.n_classes - 1} df)</td>{_num(c.shift_statistic)}</tr>"
@@ -257,13 +266,15 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         parts.append(
             f'<p id="prevalence-shrunk">The {level} intervals are confidence intervals for the '
             "class shares of the population the unlabelled rows come from, around the "
-            "maximum-likelihood estimate. The rules use that estimate shrunk toward the source "
-            f"shares ({pull}), so that a noisy estimate does not move every decision."
+            "maximum-likelihood estimate. The rules start from that estimate shrunk toward the "
+            f"source shares ({pull}), so that a noisy estimate does not move every decision."
             + (" Here a shrunk share lies outside its interval: the unlabelled rows are too few "
                "to outweigh the pull toward the labelled shares. Read the moved rules as "
                "cautious, not as an estimate of the new shares." if outside else "")
             + "</p>"
         )
+    if applied is not None:
+        parts.append(gate_sentence(weight, "class shares"))
     parts.append(notes_box([n for n in c.notes if n.key == "prevalence"], "notes-prevalence"))
     if "class_prior" in figures:  # drawn with matplotlib only (the plot extra)
         parts.append(_figure(

@@ -194,12 +194,14 @@ def general_target_columns(content, proba, y_index, w, rc: RuleCosts, q, rule_fn
     """Share of each action and expected cost on the unlabelled rows, for every rule.
 
     Every rule acts on the unadjusted probabilities ``q``; its expected cost there uses the
-    posteriors re-weighted to the estimated priors (Saerens et al. 2002, eq. 2.4). "Within
+    posteriors re-weighted to the applied priors (the estimated ones, moved as far as the
+    wrapper's evidence gate allows; Saerens et al. 2002, eq. 2.4). "Within
     capacity" is judged there, on the rows the rule will act on.
     """
     if rc.unlabelled is None:
         return
-    src, tgt = content.source_prior, content.target_prior
+    # moved as the wrapper moves its predictions: to the shares its evidence gate applies
+    src, tgt = content.source_prior, content.applied_prior
     q_adj = adjust_to_prior(q, src, tgt)
     E = expected_costs(q_adj, rc.unlabelled)
     n_act = rc.matrix.shape[1]
@@ -247,7 +249,7 @@ def _capacity_rule(content, proba, y_index, w, rc: RuleCosts, q, moved: bool,
     threshold is applied to the labelled rows for their realised cost.
     """
     j, cap = content.capacity
-    src, tgt = content.source_prior, content.target_prior
+    src, tgt = content.source_prior, content.applied_prior
     post_q = adjust_to_prior(q, src, tgt) if moved else q
     E_act = expected_costs(post_q, rc.unlabelled)
     budget = notes.compute("capacity", "capacity-respecting rule", fit_action_budget, E_act, j,
@@ -282,14 +284,21 @@ def recommend_general(content, proba, y_index, w, rc: RuleCosts | None, q,
     row = rows["chosen"]
     reasons = [f"The rule in use is {content.rule_source}."]
     moved = False
-    if "adapted" in rows and content.shift_pvalue is not None and content.shift_pvalue < 0.01:
+    # the wrapper's evidence gate decides whether and how far the shares move
+    # (PriorShiftWrapper.adaptation_weight_); the test's p-value alone does not
+    weight = content.adaptation_weight
+    if "adapted" in rows and weight is not None and weight > 0:
         row, moved = rows["adapted"], True
+        share = "all" if weight >= 1.0 else f"{100 * weight:.0f}%"
         reasons.append(f"The class shares of the unlabelled rows have moved (shift test p = "
-                       f"{content.shift_pvalue:.2g}), so the probabilities are moved to the "
-                       "estimated shares before the least expected cost action is taken "
-                       "(Saerens et al. 2002).")
+                       f"{content.shift_pvalue:.2g}); the evidence moves them {share} of the "
+                       "way to the estimated shares, as PriorShiftWrapper would, and the "
+                       "probabilities are moved to those shares before the least expected cost "
+                       "action is taken (Saerens et al. 2002).")
     elif content.shift_pvalue is not None:
-        reasons.append("The shift test does not reject unchanged class shares at the 1% level.")
+        reasons.append("The shift test's evidence is below the cutoff at which "
+                       "PriorShiftWrapper moves the class shares (shift test p = "
+                       f"{content.shift_pvalue:.2g}), so the probabilities are not moved.")
     basis = "labelled" if row.target_shares is None else "unlabelled"
     shares = row.shares if basis == "labelled" else row.target_shares
     within = None

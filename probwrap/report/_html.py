@@ -24,9 +24,11 @@ from ._html_parts import (
     _text,
     ece_note,
     figure_to_svg,
+    gate_sentence,
     metric_rows_html,
     notes_box,
     recommendation_box,
+    share_of_way,
 )
 from ._page_css import PAGE_CSS as _CSS
 from ._promises import guarantee_html, late_label_html
@@ -269,8 +271,15 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
             f'<tr data-item="shift_pvalue"><td>shift test p-value</td>'
             f'<td data-value="{c.shift_pvalue!r}">{c.shift_pvalue:.3g}</td></tr>'
             + (
+                f'<tr data-item="applied"><td>prevalence the rules move to (the source '
+                f"prevalence moved {share_of_way(c.adaptation_weight)} of the way to the "
+                f"estimate, as PriorShiftWrapper's evidence gate does)</td>"
+                f"{_num(c.applied_prevalence)}</tr>"
+                if c.applied_prevalence is not None and c.adaptation_weight is not None else ""
+            )
+            + (
                 f'<tr data-item="adapted_cutoff"><td>{_text(c.chosen_name)}, moved to the '
-                f"estimated prevalence</td>{_num(c.adapted_cutoff)}</tr>"
+                f"applied prevalence</td>{_num(c.adapted_cutoff)}</tr>"
                 if c.adapted_cutoff is not None else ""
             )
             + "</tbody></table>"
@@ -291,8 +300,9 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
                 f'<p id="prevalence-shrunk">The {level} interval is a confidence interval for '
                 "the prevalence of the population the unlabelled rows come from, around the "
                 "maximum-likelihood estimate; it carries the sampling error of both the labelled "
-                "and the unlabelled rows. The rules use that estimate shrunk toward the source "
-                f"prevalence ({pull}), so that a noisy estimate does not move every decision."
+                "and the unlabelled rows. The rules start from that estimate shrunk toward the "
+                f"source prevalence ({pull}), so that a noisy estimate does not move every "
+                "decision."
                 + (f" Here the shrunk value lies outside the interval: the data reject it at the "
                    f"{level} level, and {c.n_unlabelled or 'the'} unlabelled rows are too few to "
                    "outweigh the pull toward the labelled prevalence. Read the moved cutoff as "
@@ -300,6 +310,8 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
                    if outside else "")
                 + "</p>"
             )
+        if c.applied_prevalence is not None and c.adaptation_weight is not None:
+            parts.append(gate_sentence(c.adaptation_weight, "prevalence"))
         parts.append(notes_box(
             [n for n in c.notes if n.key in ("prevalence", "batches")], "notes-prevalence"))
         if "prevalence" in figures:

@@ -138,3 +138,22 @@ def ece_note(c: Any) -> str:
         "section 5.2.1), which contains that estimate; both are floored at 0. Plain binned "
         f"values: {said}.</p>"
     )
+
+
+def share_of_way(weight: float | None) -> str:
+    """``adaptation_weight`` as words: "none", "all" or a percentage."""
+    if weight is None or weight <= 0:
+        return "none"
+    return "all" if weight >= 1 else f"{100 * weight:.0f}%"
+
+
+def gate_sentence(weight: float, what: str) -> str:
+    """What the evidence gate did, as PriorShiftWrapper does it (``adaptation_weight_``)."""
+    if weight <= 0:
+        return (f'<p id="prevalence-gate">The shift evidence is below the cutoff at which '
+                f"PriorShiftWrapper moves the {what}, so the rules do not move: they act as on "
+                "the labelled rows.</p>")
+    return (f'<p id="prevalence-gate">As PriorShiftWrapper does, the rules move the {what} '
+            f"{share_of_way(weight)} of the way from the labelled rows' to the shrunk estimate: "
+            "the stronger the shift test's evidence, the further (adaptation weight "
+            f"{weight:.3g}).</p>")

@@ -12,7 +12,12 @@ computed per block and added on the client (the driver):
 - EM: each iteration is one pass computing ``sum_i w_i normalise(p_i * prior / source)``;
 - BBSE / ACC: the target's mean (hard or soft) predicted-class distribution, one pass;
 - the two-sample score test of "no shift": the mean and covariance of the per-row scores, one
-  pass over the labelled and one over the unlabelled blocks.
+  pass over the labelled and one over the unlabelled blocks;
+- the analytic interval of the EM prior (:mod:`probwrap.shift._analytic`): the sums behind the
+  sandwich covariance of the calibration and the source prior (one pass over the labelled
+  blocks), the maximum-likelihood EM, and the sums of the scores and their derivatives at it
+  (one pass over the unlabelled rows, predicting again: the calibration's Jacobian needs the
+  model's raw posteriors).
 
 The client only ever holds k-vectors and k x k matrices. The arithmetic is that of
 :mod:`probwrap.shift` on the same rows, so results agree with the in-memory path up to the order
@@ -219,6 +224,11 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             cal.clip_ = clip
         hard, soft = parts.reduce(_confusions, cal, k)
         su, suu, sw, sww = parts.reduce(_class_score_sums, cal, class_weight / total)
+        eta_sums = None
+        if _wants_interval(owner):
+            # the labelled side of the analytic interval: sums for the sandwich covariance of
+            # the calibration and the source prior (probwrap.shift._analytic), one pass
+            eta_sums = parts.reduce(_labelled_interval_sums, cal, class_weight / total)
     finally:
         parts.release()  # release the persisted blocks on the workers
     est.n_classes_ = k
@@ -229,6 +239,13 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     est.soft_confusion_ = soft / total
     est._src = None
     est.n_source_effective_ = total**2 / squared_weight
+    if eta_sums is not None:
+        from ..shift._analytic import labelled_cov_from_sums
+
+        # the row count behind the calibration's penalty, as in memory (count_weights)
+        n_rows = total if total >= positive_rows else total**2 / squared_weight
+        est._labelled_cov = labelled_cov_from_sums(cal, eta_sums, n_rows,
+                                                   est.n_source_effective_)
     # the labelled side of the two-sample shift test, as in memory: the plain mean of the
     # scores and its variance (probwrap.shift._shift_tests._source_moments without classes)
     est._source_score = _source_moments_from_sums(su.sum(axis=0), suu.sum(axis=0),
@@ -242,12 +259,72 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     return est
 
 
+# -- the analytic interval (more than two classes, method="em") -------------------------------
+def _wants_interval(owner: Any) -> bool:
+    """Whether a Dask fit prepares the analytic interval: as in memory, for ``method="em"`` with
+    ``interval="score"`` and ``n_resamples > 0`` (bootstrap intervals are not offered here)."""
+    return (owner.method == "em" and getattr(owner, "interval", "score") == "score"
+            and int(owner.n_resamples) > 0)
+
+
+def _labelled_interval_sums(block, calibrator, src):
+    """Sums over a labelled block for the analytic interval (raw posteriors are kept there)."""
+    from ..shift._analytic import labelled_sums
+
+    p, _, y, w = block
+    return labelled_sums(calibrator, p, y, w, src)
+
+
+def _target_interval_sums(estimator, calibrator, src, prior, Xb, wb):
+    """Sums over an unlabelled block for the analytic interval at the maximum-likelihood
+    ``prior``; from the model's raw posteriors (the calibration's Jacobian needs them, and the
+    persisted target blocks hold calibrated ones), so this pass predicts once more."""
+    from ..shift._analytic import target_sums
+
+    p = np.asarray(estimator.predict_proba(Xb), dtype=float)
+    w = np.ones(p.shape[0]) if wb is None else np.asarray(wb, dtype=float).ravel()
+    if w.sum() <= 0:  # a block without weight adds nothing (its normalised sums are undefined)
+        return tuple(0.0 * x for x in target_sums(calibrator, p[:1], np.ones(1), src, prior))
+    return target_sums(calibrator, p, w, src, prior)
+
+
+def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff):
+    """The in-memory analytic interval (``PriorEstimator.estimate`` with more than two classes)
+    from per-block sums: the maximum-likelihood prior (EM without the shrinkage's pseudo-rows,
+    started at the shrunk estimate), then one pass for the score sums. Returns ``(ml prior,
+    interval widened to contain prior, ml interval)``."""
+    from ..shift._analytic import interval_from_sums
+    from ..shift._resample import _widen
+
+    src = est.source_prior_
+    if float(est.prior_strength) > 0:
+        start = prior if np.all(prior > 0) else src.copy()
+        ml = _em_dask(parts, src, start, total, float(est.tol), int(est.max_iter))[0]
+    else:
+        ml = prior
+    sums = rows.map_reduce(_target_interval_sums, estimator, est.calibrator_, src, ml)
+    bounds = interval_from_sums(sums, n_eff, ml, est._labelled_cov, est.confidence_level)[0]
+    level = est.confidence_level
+    return ml, _widen(bounds, prior, ml, n_eff, level), _widen(bounds, ml, ml, n_eff, level)
+
+
 # -- target side ------------------------------------------------------------------------------
-def _em_step(block, ratio_prior):
+def _em_step(block, src, prior, also=None):
+    """One EM pass over a block: ``sum_i w_i normalise(q_i * prior)`` with ``q = p / src``, and
+    the sums ``sum_i w_i q_i / m_i`` and ``sum_i w_i q_i q_i' / m_i^2`` (``m_i = q_i . prior``)
+    of the EM map's Jacobian; with ``also``, the weighted log-likelihood terms
+    ``sum_i w_i log(q_i . x)`` at ``prior`` and ``also`` too (for the SQUAREM safeguard;
+    probwrap.shift._em_loop)."""
     p, w = block
-    num = p * ratio_prior
+    q = p / src
+    num = q * prior
     den = num.sum(axis=1, keepdims=True)
-    return w @ (num / np.maximum(den, _TINY))
+    g = q / np.maximum(den, _TINY)
+    out = (w @ (num / np.maximum(den, _TINY)), w @ g, (g * w[:, None]).T @ g)
+    if also is None:
+        return out
+    return (*out, np.array([w @ np.log(np.maximum(den[:, 0], _TINY)),
+                            w @ np.log(np.maximum(q @ also, _TINY))]))
 
 
 def _means(block, k):
@@ -260,38 +337,50 @@ def _means(block, k):
 
 def _em_dask(parts, src, init, total, tol, max_iter, pseudo=None, scale=1.0):
     """EM of probwrap.shift.em_prior as reductions: same update (weights times ``scale``, plus
-    the Dirichlet pseudo-rows ``pseudo``) and the same stopping rule on the bound of the
-    distance to the fixed point; returns (prior, n_iter, converged, distance)."""
+    the Dirichlet pseudo-rows ``pseudo``), the same SQUAREM acceleration and the same stopping
+    rule on the bound of the distance to the fixed point (the loop is shared:
+    probwrap.shift._em_loop); one reduction per EM pass. Returns (prior, n_iter, converged,
+    distance)."""
+    from ..shift._em_loop import accelerated_em
+
     pseudo = np.zeros_like(src) if pseudo is None else pseudo
-    prior = init.copy()
-    prev, dist = np.inf, np.inf
-    for it in range(1, max_iter + 1):
-        new = (scale * parts.reduce(_em_step, prior / src) + pseudo) / (
-            scale * total + pseudo.sum()
-        )
+    has_pseudo = pseudo > 0
+
+    def penalty(x):
+        with np.errstate(divide="ignore"):
+            return float(pseudo[has_pseudo] @ np.log(x[has_pseudo]))
+
+    def em_map(prior, also=None):
+        if also is None:
+            sums, g, h = parts.reduce(_em_step, src, prior)
+        else:
+            sums, g, h, logliks = parts.reduce(_em_step, src, prior, also)
+        denominator = scale * total + pseudo.sum()
+        new = (scale * sums + pseudo) / denominator
         new = new / new.sum()
-        step = float(np.max(np.abs(new - prior)))
-        prior = new
-        rho = step / prev if prev > 0 else 0.0
-        dist = step * rho / (1.0 - rho) if rho < 1.0 else np.inf
-        if step == 0.0 or (dist <= tol and step <= tol):
-            return prior, it, True, (0.0 if step == 0.0 else dist)
-        prev = step
-    return prior, max_iter, False, dist
+        # the Jacobian of the map at `prior` (as in memory, probwrap.shift._estimate._em_map)
+        jac = scale * (np.diag(g) - prior[:, None] * h) / denominator
+        if also is None:
+            return new, None, None, lambda: jac
+        return (new, scale * float(logliks[0]) + penalty(prior),
+                scale * float(logliks[1]) + penalty(also), lambda: jac)
+
+    return accelerated_em(em_map, init.copy(), tol, max_iter)
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None):
     """Prior estimate (a :class:`probwrap.shift.PriorEstimate`) of unlabelled multiclass Dask or
     Spark rows.
 
-    No interval (``interval=None``).
+    For ``method="em"`` fitted with ``interval="score"`` and ``n_resamples > 0``: the analytic
+    (delta-method) interval of the in-memory path from per-block sums, with ``ml_prior`` and
+    ``ml_interval``; otherwise no interval (``interval=None``).
     """
     from ..shift import PriorEstimate, acc_prior, bbse_prior
 
     k = est.n_classes_
-    parts = rows_of(X, None, sample_weight, estimator).persist(
-        _target_block, estimator, est.calibrator_
-    )
+    rows = rows_of(X, None, sample_weight, estimator)
+    parts = rows.persist(_target_block, estimator, est.calibrator_)
     try:
         soft_mean, hard_mean, (total, squared, n_rows, entropy) = parts.reduce(_means, k)
         if total <= 0:
@@ -325,6 +414,10 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             else:
                 point = acc_prior(mu[None, :], conf, soft=True)
             prior = point.prior
+        ml = ml_interval = interval = None
+        if method == "em" and getattr(est, "_labelled_cov", None) is not None:
+            ml, interval, ml_interval = _analytic_interval(est, estimator, rows, parts, prior,
+                                                           total, n_eff)
     finally:
         parts.release()
     from ..shift._estimator import _current_source_score
@@ -345,9 +438,11 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         n_iter=n_iter,
         converged=converged,
         n_rows=int(n_rows),
-        interval=None,
+        interval=interval,
         shift_statistic=stat,
         shift_pvalue=pvalue,
         distance=float(distance),
         null_harm_scale=harm_scale,
+        ml_prior=ml,
+        ml_interval=ml_interval,
     )

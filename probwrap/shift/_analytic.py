@@ -63,6 +63,54 @@ def _calibrated(cal, proba: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
     return p, np.einsum("nlm,nmq->nlq", curv, jac, optimize=True)
 
 
+def labelled_sums(
+    cal, proba: np.ndarray, y: np.ndarray, w: np.ndarray, source_prior: np.ndarray,
+) -> tuple[np.ndarray, ...]:
+    """Weighted sums over labelled rows behind :func:`labelled_parameter_cov` (they add over
+    blocks of rows): ``(sum w, sum w x_i, sum w x_i x_i^T, sum w H_i)`` with ``x_i = (g_i,
+    e_i)`` — the calibration's per-row score ``g_i`` (when there is a calibration) and the
+    class indicators ``e_i`` minus the source shares — and ``H_i`` the row's Hessian of the
+    calibration's log loss (an empty matrix without a calibration)."""
+    k = proba.shape[1]
+    onehot = np.eye(k)[y]
+    parts = [onehot[:, 1:] - source_prior[1:]]
+    hess = np.zeros((0, 0))
+    if cal is not None:
+        z = cal.log_scores(proba)
+        n_scale = 1 if cal.kind == "temperature" else k
+        p = np.exp(_log_softmax(z * cal.scale_ + cal.bias_, axis=1))
+        jac = _logit_jacobian(z, n_scale)
+        parts.insert(0, np.einsum("nkq,nk->nq", jac, p - onehot))
+        curv = p[:, :, None] * np.eye(k)[None] - p[:, :, None] * p[:, None, :]
+        hess = np.einsum("n,nkq,nkl,nlr->qr", w, jac, curv, jac, optimize=True)
+    x = np.hstack(parts)
+    return np.array([w.sum()]), w @ x, (x * w[:, None]).T @ x, hess
+
+
+def labelled_cov_from_sums(
+    cal, sums: tuple[np.ndarray, ...], n_rows: float, n_eff: float,
+) -> np.ndarray:
+    """The sandwich covariance of ``eta`` from :func:`labelled_sums` (added over blocks):
+    ``n_rows`` the row count behind the calibration's penalty (``count_weights``), ``n_eff``
+    Kish's effective number of labelled rows."""
+    total, sx, sxx, shess = sums
+    total = float(np.asarray(total).ravel()[0])
+    mean, second = sx / total, sxx / total
+    m = second.shape[0]
+    t = np.eye(m)
+    if cal is not None:
+        k = cal.bias_.shape[0]
+        n_scale = 1 if cal.kind == "temperature" else k
+        theta = np.concatenate([cal.scale_[:n_scale], cal.bias_[1:]])
+        lam = float(cal.shrinkage) / n_rows if 0.0 < n_rows < np.inf else 0.0
+        hess = shess / total + scale_penalty(theta, n_scale, lam)[2]
+        q = theta.shape[0]
+        t[:q, :q] = -np.linalg.inv(hess)  # the calibration's influence: -H^-1 g_i
+    mean = t @ mean
+    cov = t @ second @ t.T - np.outer(mean, mean)
+    return cov / max(float(n_eff), 1.0)
+
+
 def labelled_parameter_cov(
     cal, proba: np.ndarray, y: np.ndarray, w: np.ndarray, source_prior: np.ndarray,
     n_eff: float,
@@ -76,29 +124,12 @@ def labelled_parameter_cov(
     minus the shares. The covariance of the stacked per-row influence ``(-H^-1 g_i, e_i)`` over
     ``n_eff`` rows (Kish's effective size, as the shift test counts the labelled rows).
     """
-    k = proba.shape[1]
-    wn = w / w.sum()
-    onehot = np.eye(k)[y]
-    parts = [onehot[:, 1:] - source_prior[1:]]
-    if cal is not None:
-        z = cal.log_scores(proba)
-        n_scale = 1 if cal.kind == "temperature" else k
-        p = np.exp(_log_softmax(z * cal.scale_ + cal.bias_, axis=1))
-        jac = _logit_jacobian(z, n_scale)
-        grad = np.einsum("nkq,nk->nq", jac, p - onehot)
-        curv = p[:, :, None] * np.eye(k)[None] - p[:, :, None] * p[:, None, :]
-        hess = np.einsum("n,nkq,nkl,nlr->qr", wn, jac, curv, jac, optimize=True)
-        theta = np.concatenate([cal.scale_[:n_scale], cal.bias_[1:]])
-        from ..calibration._base import count_weights
+    from ..calibration._base import count_weights
 
-        with np.errstate(over="ignore"):
-            n_rows = float(count_weights(w)[0].sum())
-        lam = float(cal.shrinkage) / n_rows if 0.0 < n_rows < np.inf else 0.0
-        hess = hess + scale_penalty(theta, n_scale, lam)[2]
-        parts.insert(0, -np.linalg.solve(hess, grad.T).T)
-    infl = np.hstack(parts)
-    infl = infl - wn @ infl
-    return (infl * wn[:, None]).T @ infl / max(float(n_eff), 1.0)
+    with np.errstate(over="ignore"):
+        n_rows = float(count_weights(w)[0].sum())
+    return labelled_cov_from_sums(cal, labelled_sums(cal, proba, y, w, source_prior),
+                                  n_rows, n_eff)
 
 
 def score_derivatives(
@@ -135,20 +166,30 @@ def score_derivatives(
     return psi, a, np.hstack(blocks)
 
 
-def analytic_prior_interval(
-    cal, proba: np.ndarray, w: np.ndarray, n_eff: float, source_prior: np.ndarray,
-    prior: np.ndarray, eta_cov: np.ndarray | None, confidence_level: float,
+def target_sums(
+    cal, proba: np.ndarray, w: np.ndarray, source_prior: np.ndarray, prior: np.ndarray,
+) -> tuple[np.ndarray, ...]:
+    """Weighted sums over unlabelled rows behind :func:`analytic_prior_interval` (they add over
+    blocks of rows): ``(sum w, sum w psi_i, sum w psi_i psi_i^T, sum w d psi_i / d eta)``."""
+    w = np.asarray(w, dtype=float)
+    total = float(w.sum())
+    psi, _, d = score_derivatives(cal, proba, w, source_prior, prior)
+    return np.array([total]), w @ psi, (psi * w[:, None]).T @ psi, d * total
+
+
+def interval_from_sums(
+    sums: tuple[np.ndarray, ...], n_eff: float, prior: np.ndarray,
+    eta_cov: np.ndarray | None, confidence_level: float,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Delta-method interval of the maximum-likelihood ``prior`` of unlabelled rows ``proba``
-    (raw model posteriors; ``cal`` the fitted calibration or None). Returns ``(interval of
-    shape (k, 2), covariance of the k shares)``. ``eta_cov`` None: the labelled rows' error
-    is left out (the unlabelled rows' sampling error only)."""
-    k = proba.shape[1]
+    """The interval and covariance of :func:`analytic_prior_interval` from :func:`target_sums`
+    (added over blocks)."""
+    total, spsi, spp, sd = sums
+    total = float(np.asarray(total).ravel()[0])
     pi = np.asarray(prior, dtype=float)
-    wn = w / w.sum()
-    psi, a, d = score_derivatives(cal, proba, w, source_prior, pi)
-    centred = psi - wn @ psi
-    middle = (centred * wn[:, None]).T @ centred / max(float(n_eff), 1.0)
+    k = pi.shape[0]
+    mean, second, d = spsi / total, spp / total, sd / total
+    a = -second
+    middle = (second - np.outer(mean, mean)) / max(float(n_eff), 1.0)
     if eta_cov is not None:
         if d.shape[1] != eta_cov.shape[0]:
             raise ValueError("The labelled summary does not match the calibration.")
@@ -158,8 +199,25 @@ def analytic_prior_interval(
     # all k shares: share 0 is one minus the others
     t = np.vstack([-np.ones((1, k - 1)), np.eye(k - 1)])
     cov = t @ cov_free @ t.T
+    return share_interval(pi, cov, confidence_level), cov
+
+
+def share_interval(pi: np.ndarray, cov: np.ndarray, confidence_level: float) -> np.ndarray:
+    """Per-share interval from the delta-method covariance ``cov`` of the shares ``pi``."""
     se = np.sqrt(np.maximum(np.diag(cov), 0.0))
     zq = float(norm.ppf(0.5 + confidence_level / 2.0))
     lo = np.clip(pi - zq * se, 0.0, 1.0)
     hi = np.clip(pi + zq * se, 0.0, 1.0)
-    return np.column_stack([lo, hi]), cov
+    return np.column_stack([lo, hi])
+
+
+def analytic_prior_interval(
+    cal, proba: np.ndarray, w: np.ndarray, n_eff: float, source_prior: np.ndarray,
+    prior: np.ndarray, eta_cov: np.ndarray | None, confidence_level: float,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Delta-method interval of the maximum-likelihood ``prior`` of unlabelled rows ``proba``
+    (raw model posteriors; ``cal`` the fitted calibration or None). Returns ``(interval of
+    shape (k, 2), covariance of the k shares)``. ``eta_cov`` None: the labelled rows' error
+    is left out (the unlabelled rows' sampling error only)."""
+    sums = target_sums(cal, proba, w, source_prior, prior)
+    return interval_from_sums(sums, n_eff, prior, eta_cov, confidence_level)
