@@ -42,6 +42,13 @@ CALIBRATION_METHODS: dict[str, type[CalibrationMap]] = {
 #: vector scaling is Platt scaling with a shrunken intercept.
 _AUTO_MULTICLASS_ONLY = ("vector_scaling",)
 
+#: Candidates of ``method="auto"`` that compete only for binary models: one-vs-rest beta costs
+#: a quarter of ``auto``'s time on multiclass models (three parameters per class, fitted in
+#: every fold) and is rarely chosen there; where it was, the map chosen without it was about as
+#: good (benchmarks/calibration.py's multiclass draws and the fresh data sets; measured in
+#: docs/calibration.md, "Speed"). Named in ``candidates``, it is scored.
+_AUTO_BINARY_ONLY = ("beta",)
+
 #: Methods that ``method="auto"`` leaves out unless named in ``candidates``: matrix scaling has
 #: k^2 + k - 1 parameters and needs many rows per class; the identity (the model's own
 #: probabilities), as the simplest candidate of the one-standard-error rule, was kept on too
@@ -175,6 +182,8 @@ class _AutoChoice:
             names = [n for n in names if n not in _AUTO_EXCLUDED_BY_DEFAULT]
             if n_maps == 1:  # binary
                 names = [n for n in names if n not in _AUTO_MULTICLASS_ONLY]
+            else:
+                names = [n for n in names if n not in _AUTO_BINARY_ONLY]
         if getattr(self, "response_", "predict_proba") == "decision_function":
             # decision values are not probabilities: there are none of the model's own to keep
             names = [n for n in names if n != "identity"] or names
@@ -315,6 +324,14 @@ class _AutoChoice:
         binary = scores.ndim == 1
         names = self._auto_names(y.shape[0], 1 if binary else scores.shape[1])
         notes: dict[str, str] = {}
+        if not binary and self.candidates is None:
+            for nm in _AUTO_BINARY_ONLY:
+                notes[nm] = (
+                    "not a default candidate for multiclass models: one-vs-rest beta costs about "
+                    "a quarter of auto's time and was rarely chosen, and then by little, on the "
+                    "benchmarks' multiclass sets (docs/calibration.md, Speed); name it in "
+                    "`candidates` to score it"
+                )
         present = np.bincount(y[w > 0], minlength=len(self.classes_))
         present = present[present > 0]
         if present.shape[0] < 2 or present.min() < 2:

@@ -114,7 +114,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         needs many rows per class) and the identity (listed, it is scored only for
         ``predict_proba`` output, and as the candidate with no parameters it wins every close
         race of the one-standard-error rule), with vector scaling for multiclass models only (on binary
-        log-odds it is Platt scaling); Venn–Abers is a
+        log-odds it is Platt scaling) and beta for binary models only (one-vs-rest beta took
+        about a quarter of ``auto``'s time on multiclass models and was rarely chosen, and then
+        by little: see docs/calibration.md, "Speed"); Venn–Abers is a
         candidate only while the held-out rows times the number of binary maps (1 for two
         classes, k one-vs-rest) stay below 1,000: it costs one to two orders of magnitude more
         to cross-validate than the others, and beyond small sets its merged probability agrees

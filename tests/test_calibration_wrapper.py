@@ -263,6 +263,23 @@ def test_map_instance_is_cloned(frozen_cancer):
     assert model.method_ == "IsotonicMap"
 
 
+def test_auto_leaves_one_vs_rest_beta_out_for_multiclass_models_unless_named():
+    # one-vs-rest beta is not a default candidate for multiclass models (a quarter of auto's
+    # time, rarely chosen: docs/calibration.md, "Speed"); method_notes_ says so, and named in
+    # `candidates` it is scored as before
+    X, y = load_iris(return_X_y=True)
+    base = GaussianNB().fit(X[::2], y[::2])
+    auto = CalibrationWrapper(FrozenEstimator(base), random_state=0).fit(X[1::2], y[1::2])
+    assert "beta" not in auto.method_scores_
+    assert "not a default candidate for multiclass models" in auto.method_notes_["beta"]
+    assert {"temperature", "platt", "vector_scaling"} <= set(auto.method_scores_)
+    named = CalibrationWrapper(
+        FrozenEstimator(base), random_state=0, candidates=["temperature", "beta"]
+    ).fit(X[1::2], y[1::2])
+    # tried: scored, or (here: iris's setosa is separable) not eligible after its fold fit
+    assert "beta" in named.method_scores_ or "fold 0" in named.method_notes_["beta"]
+
+
 def test_auto_leaves_venn_abers_out_on_large_heldout_sets():
     from sklearn.datasets import make_classification
 
