@@ -11,7 +11,9 @@ How blocks are treated (also in DEVELOPERS.md, "How we test"):
 - Each ``bash`` block runs with ``bash -e`` in an empty temporary folder where the input files the
   docs name (``heldout.csv``, ``this-week.csv``, ... see ``INPUT_FILES`` in
   ``tests/docs_blocks.py``) were first written from
-  ``probwrap.datasets``. A doc that names a new input file adds it there.
+  ``probwrap.datasets``. A doc that names a new input file adds it there. README blocks made
+  only of ``probwrap`` commands are the exception: tests/test_cli_readme.py runs them as
+  written (and checks their output files), so they are not run twice.
 - Markers on the line(s) just before a fence (blank lines allowed between):
 
   ``<!-- not-run: reason -->``
@@ -88,11 +90,24 @@ def _python_params():
     return params
 
 
+def _run_by_the_readme_test(block) -> bool:
+    """README blocks made only of ``probwrap`` commands (and comments) are run as written, with
+    their output files checked, by tests/test_cli_readme.py (the same command lines: its parser
+    keeps exactly the lines whose ``&&`` parts all start with ``probwrap``). Running them here
+    as well took about 20 s of CI time for no further check."""
+    if block.path.name != "README.md" or block.marker is not None:
+        return False
+    lines = [line.strip() for line in block.code.replace("\\\n", " ").splitlines()]
+    lines = [line for line in lines if line and not line.startswith("#")]
+    return bool(lines) and all(
+        part.strip().startswith("probwrap ") for line in lines for part in line.split("&&"))
+
+
 def _shell_params():
     return [
         pytest.param(b, id=b.name, marks=_mark(b, pytest.mark.slow))
         for b in CODE_BLOCKS
-        if b.language in SHELL and b.marker != "fresh-venv"
+        if b.language in SHELL and b.marker != "fresh-venv" and not _run_by_the_readme_test(b)
     ]
 
 
@@ -134,6 +149,21 @@ def test_shell_blocks_run(block, input_folder, tmp_path):
     done = subprocess.run(["bash", "-e", "-c", block.code], cwd=work, env=_env(),
                           capture_output=True, text=True, timeout=600)
     assert done.returncode == 0, (done.stdout[-1500:], done.stderr[-3000:])
+
+
+def test_readme_command_blocks_left_out_here_are_run_by_the_readme_test():
+    left_out = [b for b in CODE_BLOCKS if b.language in SHELL and _run_by_the_readme_test(b)]
+    assert left_out  # the README's command-line tour
+    spec = importlib.util.spec_from_file_location(
+        "probwrap_tests_cli_readme", Path(__file__).with_name("test_cli_readme.py"))
+    cli_readme = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(cli_readme)
+    run_there = {" ".join(c.split()) for c in cli_readme.readme_commands()}
+    for b in left_out:
+        for line in b.code.replace("\\\n", " ").splitlines():
+            line = line.strip()
+            if line and not line.startswith("#"):
+                assert " ".join(line.split()) in run_there, f"{b.name}: {line!r} is not run"
 
 
 def test_every_fence_names_its_language():

@@ -155,6 +155,17 @@ def test_poisson_binomial_pmf_matches_binomial_and_enumeration():
     # counts repeat a trial
     np.testing.assert_allclose(poisson_binomial_pmf(p[:3], np.array([2, 1, 3])),
                                poisson_binomial_pmf(np.repeat(p[:3], [2, 1, 3])), atol=1e-14)
+    # reference: the DFT of the characteristic function (Hong 2013, the DFT-CF method:
+    # pmf = inverse DFT of prod_i (1 - p_i + p_i exp(2 pi i l / (N + 1)))), on 1,500 unequal
+    # trials with repeats; 1e-13 allows for the rounding of N-term sums in both
+    q = np.random.default_rng(4).beta(0.5, 5.0, 1000)
+    counts = np.random.default_rng(5).integers(1, 3, 1000)
+    trials = np.repeat(q, counts)
+    size = trials.shape[0] + 1
+    z = np.exp(2j * np.pi * np.arange(size) / size)
+    chi = np.exp(np.log(1.0 - trials[:, None] + trials[:, None] * z[None, :]).sum(axis=0))
+    hong = np.maximum(np.fft.fft(chi).real, 0.0)  # chi_l = sum_k pmf_k z_l^k
+    np.testing.assert_allclose(poisson_binomial_pmf(q, counts), hong / hong.sum(), atol=1e-13)
 
 
 def test_exact_interval_is_the_tightest_equal_tailed_one():

@@ -309,11 +309,22 @@ def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff):
 
 
 # -- target side ------------------------------------------------------------------------------
-def _em_step(block, ratio_prior):
+def _em_step(block, src, prior, also=None):
+    """One EM pass over a block: ``sum_i w_i normalise(q_i * prior)`` with ``q = p / src``, and
+    the sums ``sum_i w_i q_i / m_i`` and ``sum_i w_i q_i q_i' / m_i^2`` (``m_i = q_i . prior``)
+    of the EM map's Jacobian; with ``also``, the weighted log-likelihood terms
+    ``sum_i w_i log(q_i . x)`` at ``prior`` and ``also`` too (for the SQUAREM safeguard;
+    probwrap.shift._em_loop)."""
     p, w = block
-    num = p * ratio_prior
+    q = p / src
+    num = q * prior
     den = num.sum(axis=1, keepdims=True)
-    return w @ (num / np.maximum(den, _TINY))
+    g = q / np.maximum(den, _TINY)
+    out = (w @ (num / np.maximum(den, _TINY)), w @ g, (g * w[:, None]).T @ g)
+    if also is None:
+        return out
+    return (*out, np.array([w @ np.log(np.maximum(den[:, 0], _TINY)),
+                            w @ np.log(np.maximum(q @ also, _TINY))]))
 
 
 def _means(block, k):
@@ -326,24 +337,35 @@ def _means(block, k):
 
 def _em_dask(parts, src, init, total, tol, max_iter, pseudo=None, scale=1.0):
     """EM of probwrap.shift.em_prior as reductions: same update (weights times ``scale``, plus
-    the Dirichlet pseudo-rows ``pseudo``) and the same stopping rule on the bound of the
-    distance to the fixed point; returns (prior, n_iter, converged, distance)."""
+    the Dirichlet pseudo-rows ``pseudo``), the same SQUAREM acceleration and the same stopping
+    rule on the bound of the distance to the fixed point (the loop is shared:
+    probwrap.shift._em_loop); one reduction per EM pass. Returns (prior, n_iter, converged,
+    distance)."""
+    from ..shift._em_loop import accelerated_em
+
     pseudo = np.zeros_like(src) if pseudo is None else pseudo
-    prior = init.copy()
-    prev, dist = np.inf, np.inf
-    for it in range(1, max_iter + 1):
-        new = (scale * parts.reduce(_em_step, prior / src) + pseudo) / (
-            scale * total + pseudo.sum()
-        )
+    has_pseudo = pseudo > 0
+
+    def penalty(x):
+        with np.errstate(divide="ignore"):
+            return float(pseudo[has_pseudo] @ np.log(x[has_pseudo]))
+
+    def em_map(prior, also=None):
+        if also is None:
+            sums, g, h = parts.reduce(_em_step, src, prior)
+        else:
+            sums, g, h, logliks = parts.reduce(_em_step, src, prior, also)
+        denominator = scale * total + pseudo.sum()
+        new = (scale * sums + pseudo) / denominator
         new = new / new.sum()
-        step = float(np.max(np.abs(new - prior)))
-        prior = new
-        rho = step / prev if prev > 0 else 0.0
-        dist = step * rho / (1.0 - rho) if rho < 1.0 else np.inf
-        if step == 0.0 or (dist <= tol and step <= tol):
-            return prior, it, True, (0.0 if step == 0.0 else dist)
-        prev = step
-    return prior, max_iter, False, dist
+        # the Jacobian of the map at `prior` (as in memory, probwrap.shift._estimate._em_map)
+        jac = scale * (np.diag(g) - prior[:, None] * h) / denominator
+        if also is None:
+            return new, None, None, lambda: jac
+        return (new, scale * float(logliks[0]) + penalty(prior),
+                scale * float(logliks[1]) + penalty(also), lambda: jac)
+
+    return accelerated_em(em_map, init.copy(), tol, max_iter)
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None):
