@@ -62,7 +62,7 @@ seeds' draws (mean share closed; worst no-shift ratio).
 
 5. **Multiclass interval** (``--only=multiclass``): coverage at 90 % and 95 % of the default
    interval for three classes — the delta method on the EM fixed point with the labelled rows'
-   error stacked in — for n_labelled, n_unlabelled in {500, 2000, 10000}, on three Gaussian
+   error stacked in, a normal interval on the logit scale of each share — for n_labelled, n_unlabelled in {500, 2000, 10000}, on three Gaussian
    classes (a shrunk logistic regression, frozen) and scikit-learn's bundled wine data
    (resampled by class from held-back rows); the ratio of the interval's implied standard error
    to the spread of the estimate; beside the BCa bootstrap it replaced as the multiclass
@@ -788,7 +788,8 @@ def multiclass_coverage(quick: bool) -> None:
     reps = 60 if quick else 500
     sizes = (500, 2000) if quick else (500, 2000, 10_000)
     src_prior, tgt_prior = np.array([0.5, 0.3, 0.2]), np.array([0.3, 0.5, 0.2])
-    print(f"5. Multiclass interval (method='em', interval='score': analytic), source prior "
+    print(f"5. Multiclass interval (method='em', interval='score': analytic, logit scale of each "
+          f"share), source prior "
           f"{src_prior.tolist()}, target {tgt_prior.tolist()}, {reps} repetitions per cell; "
           "coverage of each class share, worst class shown")
     head = (f"{'data':>14} {'n_lab':>6} {'n_unl':>6} | {'cov90':>6} {'cov95':>6} "
@@ -824,7 +825,8 @@ def multiclass_coverage(quick: bool) -> None:
                 n_cells += 1
                 worst90 = c90[np.argmax(np.abs(c90 - 0.90))]
                 worst95 = c95[np.argmax(np.abs(c95 - 0.95))]
-                # the interval's implied standard error over the spread of the estimate
+                # the interval's implied standard error (width / 3.92; the interval is not
+                # symmetric on the share scale) over the spread of the estimate
                 ratio = float(np.mean(np.mean(ses, 0) / np.std(mls, 0, ddof=1)))
                 print(f"{source.name:>14} {n_lab:6d} {n_unl:6d} | {worst90:6.1%} {worst95:6.1%} "
                       f"{np.mean(width):8.4f} {ratio:8.2f} | "

@@ -157,7 +157,16 @@ class _AutoChoice:
         cv = self.cv if self.cv is not None else 5
         if isinstance(cv, numbers.Integral):
             counts = np.bincount(y)
-            n_splits = int(min(cv, max(2, counts[counts > 0].min())))
+            smallest = int(counts[counts > 0].min())
+            n_splits = int(min(cv, max(2, smallest)))
+            if self.cv is not None and n_splits < cv:
+                warnings.warn(
+                    f"CalibrationWrapper(method='auto'): `cv`={int(cv)} asks for more folds than "
+                    f"the smallest class has rows ({smallest}); the candidate maps are scored on "
+                    f"{n_splits} stratified folds instead.",
+                    UserWarning,
+                    stacklevel=4,
+                )
             n_maps = 1 if len(self.classes_) == 2 else len(self.classes_)
             if y.shape[0] * n_maps >= _TWO_FOLD_CELLS:
                 # each half holds > 10,000 rows (times maps): two folds estimate the losses

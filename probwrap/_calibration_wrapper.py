@@ -104,7 +104,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         fails raises a ``ValueError`` naming the method and the reason.
     cv : int, splitter or iterable of (train, test) pairs, default=5
         Folds for cross-fitting (stratified and shuffled when an int). With a frozen estimator
-        only ``"auto"`` uses it, to score the candidate maps.
+        only ``"auto"`` uses it, to score the candidate maps; an int larger than the smallest
+        class's count of rows is cut down to that count, with a warning.
     n_jobs : int, default=None
         Parallel jobs for cross-fitting (joblib).
     random_state : int, RandomState or None, default=None

@@ -77,3 +77,13 @@ def test_one_row_and_auto():
         w = CalibrationWrapper(frozen, method="auto").fit(Xc, yc)
     assert not _few_row_warnings(caught)
     assert w.method_ == "temperature"
+
+
+def test_auto_says_when_cv_asks_for_more_folds_than_a_class_has_rows():
+    frozen, Xc, yc = _wine_rows(6)  # 'barbera' has 6 rows: at most 6 stratified folds
+    with pytest.warns(UserWarning, match=r"`cv`=10 .* smallest class has rows \(6\).* 6 stratified"):
+        CalibrationWrapper(frozen, method="auto", cv=10, random_state=0).fit(Xc, yc)
+    with warnings.catch_warnings(record=True) as caught:  # asked for no more than it can have
+        warnings.simplefilter("always")
+        CalibrationWrapper(frozen, method="auto", cv=6, random_state=0).fit(Xc, yc)
+    assert not [w for w in caught if "`cv`=" in str(w.message)]

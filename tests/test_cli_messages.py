@@ -391,3 +391,15 @@ def test_auto_candidates_print_the_standard_error_of_the_difference(files, tmp_p
     saved = json.loads((tmp_path / "auto.json").read_text())["metadata"]["auto_log_loss"]
     lowest = min(saved, key=lambda m: saved[m]["log_loss"])
     assert re.search(rf"^  {lowest}\s+\S+\s+\(lowest\)", out, flags=re.M)
+
+
+def test_cutoff_says_why_the_bayes_and_kept_cutoffs_are_missing(files, capsys):
+    # zero or negative error costs: the least-cost search runs (a gain for a false positive is a
+    # valid cost table), but CostPolicyWrapper and the Bayes cutoff refuse them; the lines for
+    # both used to vanish from the output without a word
+    code, out, err = run(capsys, "cutoff", "--scores", files / "held.csv", "--score-column",
+                         "risk", "--label-column", "damaged", "--cost-fp", "0", "--cost-fn",
+                         "4", "--resamples", "0")
+    assert code == 0 and "Traceback" not in err
+    assert "at Bayes cutoff" not in out and "kept by CostPolicyWrapper" not in out
+    assert "probwrap cutoff: warning: no Bayes cutoff" in err and "c_fp - c_tn = 0" in err

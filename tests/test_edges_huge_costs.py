@@ -77,3 +77,21 @@ def test_cost_curve_figure_with_huge_costs(cancer):
         warnings.simplefilter("error")  # "overflow encountered in multiply" (axis ticks)
         svg = cost_svg(res, plugin=0.25)
     assert "e+30" in svg and "nan" not in svg and "inf" not in svg.lower()
+
+
+def test_matplotlib_cost_curve_with_huge_costs(cancer):
+    # the report draws this one when matplotlib is installed: its tick search overflowed
+    matplotlib = pytest.importorskip("matplotlib")
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from probwrap.plot import CostCurveDisplay
+
+    model, X, y = cancer
+    p = model.predict_proba(X)[:, 1]
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        disp = CostCurveDisplay.from_predictions(y, p, {"fp": BIG, "fn": 3.0 * BIG})
+        disp.figure_.canvas.draw()
+    assert disp.ax_.get_ylabel() == "mean cost per row (x 1e307)"
+    plt.close(disp.figure_)

@@ -165,3 +165,29 @@ def test_large_multiclass_fit_keeps_a_summary_not_the_rows(model):
         warnings.simplefilter("ignore")
         boot = PriorShiftWrapper(frozen, interval="bca", n_resamples=5).fit(X, y)
     assert boot.prior_estimator_._source_rows() is not None
+
+
+def test_share_interval_is_the_logit_interval_of_statsmodels_glm():
+    # Reference: statsmodels. With one-hot posteriors (the classes perfectly separated, no
+    # calibration) the maximum-likelihood share of class c is the share of its rows, the score
+    # variance is the multinomial one, and the analytic interval on the logit scale is the Wald
+    # interval of the intercept of an intercept-only logistic regression of "class c" on the
+    # rows (statsmodels GLM, Binomial family), mapped back by the logistic function. Both are
+    # closed forms of the same numbers: agreement to 1e-9 (GLM's IRLS stops at 1e-8 deviance).
+    sm = pytest.importorskip("statsmodels.api")
+    from scipy.special import expit
+
+    from probwrap.shift._analytic import analytic_prior_interval
+
+    rng = np.random.default_rng(7)
+    y = rng.choice(3, size=300, p=[0.6, 0.3, 0.1])
+    proba = np.eye(3)[y]
+    share = np.bincount(y, minlength=3) / y.shape[0]
+    iv, _ = analytic_prior_interval(None, proba, np.ones(300), 300.0, np.array([0.5, 0.3, 0.2]),
+                                    share, None, 0.9)
+    for c in range(3):
+        fit = sm.GLM((y == c).astype(float), np.ones((300, 1)),
+                     family=sm.families.Binomial()).fit()
+        np.testing.assert_allclose(iv[c], expit(fit.conf_int(alpha=0.1)[0]), atol=1e-9)
+    # asymmetric, as a share's sampling distribution: the small class reaches further up
+    assert iv[2, 1] - share[2] > share[2] - iv[2, 0]

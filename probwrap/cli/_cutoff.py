@@ -168,7 +168,10 @@ def cutoff_summary(
     if scale == "proba":
         try:
             bayes = plugin_cutoff(original)
-        except ValueError:
+        except ValueError as exc:
+            # the least-cost search still runs; say why two of the usual lines are missing
+            warnings.warn(f"no Bayes cutoff, and no cutoff kept by CostPolicyWrapper (which "
+                          f"refuses these costs): {exc}", UserWarning, stacklevel=2)
             bayes = None
         out["bayes_cutoff"] = bayes
         for name, cut in (("cost_at_half", 0.5), ("cost_at_bayes_cutoff", bayes)):

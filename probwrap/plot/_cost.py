@@ -243,6 +243,13 @@ class CostCurveDisplay:
         ax = style_axes(new_axes(ax))
         res = self.result
         admissible = np.asarray(res.admissible, dtype=bool)
+        costs, ylabel = np.asarray(self.costs, dtype=float), "mean cost per row"
+        finite = np.abs(costs[np.isfinite(costs)])
+        if finite.size and finite.max() > 1e300:
+            # matplotlib's tick search multiplies the axis range and overflows near the largest
+            # float: costs that large are drawn in units of a power of ten named on the axis
+            exponent = int(np.floor(np.log10(finite.max())))
+            costs, ylabel = costs / 10.0**exponent, f"mean cost per row (x 1e{exponent})"
         if self.interval is not None:
             self.interval_patch_ = ax.axvspan(
                 self.interval.low, self.interval.high, color=PALETTE["interval"], alpha=0.8,
@@ -250,11 +257,11 @@ class CostCurveDisplay:
                 label=f"cutoff {self.interval.confidence_level:.0%} bootstrap interval",
             )
         if not admissible.all():
-            ax.plot(self.cutoffs, np.where(admissible, np.nan, self.costs),
+            ax.plot(self.cutoffs, np.where(admissible, np.nan, costs),
                     color=PALETTE["inadmissible"], linewidth=1.2,
                     label=f"over capacity ({res.capacity:.0%})")
         (self.line_,) = ax.plot(
-            self.cutoffs, np.where(admissible, self.costs, np.nan), color=PALETTE["observed"],
+            self.cutoffs, np.where(admissible, costs, np.nan), color=PALETTE["observed"],
             linewidth=1.6, label=name or self.name or "mean cost per row",
         )
         self.chosen_line_ = ax.axvline(
@@ -277,7 +284,7 @@ class CostCurveDisplay:
                                      label="0.5 cutoff")
         ax.set_xlim(0, 1)
         ax.set_xlabel("cutoff on the probability (act when p > cutoff)")
-        ax.set_ylabel("mean cost per row")
+        ax.set_ylabel(ylabel)
         ax.set_title("Cost versus cutoff", fontsize=9)
         ax.legend(fontsize=7, frameon=False, loc="best")
         self.ax_ = ax

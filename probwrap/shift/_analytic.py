@@ -21,9 +21,10 @@ with :math:`A = \\partial\\bar\\psi_t/\\partial\\pi` (minus the observed informa
 :math:`D = \\partial\\bar\\psi_t/\\partial\\eta`, :math:`V_t` the covariance of the per-row scores,
 and :math:`\\Sigma_\\eta` the sandwich covariance of :math:`\\hat\\eta` from the labelled rows —
 the only thing the labelled rows contribute, so a fitted estimator keeps that small matrix
-instead of the rows. The interval of each class share is the Wald interval
-:math:`\\hat\\pi_c \\pm z\\,\\mathrm{se}_c` within [0, 1] (the caller widens it to at least the
-Clopper-Pearson interval on the unlabelled rows, as every interval here).
+instead of the rows. The interval of each class share is the normal interval on the logit
+scale of the share, :math:`\\operatorname{expit}(\\operatorname{logit}\\hat\\pi_c \\pm z\\,
+\\mathrm{se}_c / (\\hat\\pi_c(1-\\hat\\pi_c)))` (:func:`share_interval`; the caller widens it to at
+least the Clopper-Pearson interval on the unlabelled rows, as every interval here).
 """
 
 from __future__ import annotations
@@ -203,11 +204,35 @@ def interval_from_sums(
 
 
 def share_interval(pi: np.ndarray, cov: np.ndarray, confidence_level: float) -> np.ndarray:
-    """Per-share interval from the delta-method covariance ``cov`` of the shares ``pi``."""
+    """Per-share interval from the delta-method covariance ``cov`` of the shares ``pi``, on
+    the logit scale of each share.
+
+    The delta method applied to ``logit(pi_c) = log(pi_c / (1 - pi_c))`` — the log-ratio of
+    the share against all other classes together — gives the standard error ``se_c / (pi_c
+    (1 - pi_c))`` there; the normal interval on that scale, mapped back by the logistic
+    function, lies inside (0, 1) and is asymmetric the way a share's estimate is skewed (the
+    logit interval of a binomial proportion, among those compared by Brown, Cai & DasGupta
+    2001, "Interval estimation for a binomial proportion" — cited from memory; for one-hot
+    posteriors it is the Wald interval of an intercept-only logistic regression, tested
+    against statsmodels). A share estimated at exactly 0 or 1 (no logit) keeps the plain
+    normal interval clipped to [0, 1]. ``benchmarks/shift.py --only=multiclass`` measured both
+    shapes on the same draws (docs/prior_shift.md).
+    """
+    from scipy.special import expit, logit
+
+    pi = np.asarray(pi, dtype=float)
     se = np.sqrt(np.maximum(np.diag(cov), 0.0))
     zq = float(norm.ppf(0.5 + confidence_level / 2.0))
     lo = np.clip(pi - zq * se, 0.0, 1.0)
     hi = np.clip(pi + zq * se, 0.0, 1.0)
+    inside = (pi > 0.0) & (pi < 1.0)
+    if np.any(inside):
+        p = pi[inside]
+        with np.errstate(over="ignore"):
+            half = zq * se[inside] / (p * (1.0 - p))
+            centre = logit(p)
+            lo[inside] = expit(centre - half)
+            hi[inside] = expit(centre + half)
     return np.column_stack([lo, hi])
 
 
