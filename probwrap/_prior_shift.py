@@ -56,6 +56,17 @@ def evidence_gate(
     return float(weight), float(cutoff)
 
 
+def moved_prior(source_prior: Any, estimate: Any, weight: float) -> np.ndarray:
+    """The prior :class:`PriorShiftWrapper` applies: ``source_prior`` moved ``weight`` of the
+    way to ``estimate`` (``adaptation_weight_`` from :func:`evidence_gate`), renormalised; a
+    copy of ``source_prior`` where the weight is 0."""
+    src = np.asarray(source_prior, dtype=float)
+    if weight <= 0:
+        return src.copy()
+    moved = src + weight * (np.asarray(estimate, dtype=float) - src)
+    return moved / moved.sum()
+
+
 class PriorShiftWrapper(HeldOutClassifierBase):
     """Correct a classifier's probabilities for a change of class priors (prior / label shift).
 
@@ -504,11 +515,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         src = self.source_prior_
         if self.known_prior_ is not None:
             self.applied_prior_ = self.known_prior_.copy()
-        elif weight > 0:
-            moved = src + weight * (np.asarray(res.prior, dtype=float) - src)
-            self.applied_prior_ = moved / moved.sum()
         else:
-            self.applied_prior_ = src.copy()
+            self.applied_prior_ = moved_prior(src, res.prior, weight)
         if self.known_prior_ is not None:
             warnings.warn(
                 "`target_prior` is set, so predict_proba keeps adjusting to it; the estimate "

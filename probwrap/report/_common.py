@@ -288,11 +288,10 @@ def gated_prior(res: Any, source_prior: Any, index: int | None = None) -> tuple[
     :class:`~probwrap.PriorShiftWrapper` at its default settings (``max_harm``,
     ``min_evidence``): the source prior moved that share of the way to ``res.prior`` and
     renormalised, as ``PriorShiftWrapper.applied_prior_``; ``index`` picks one share."""
-    from .._prior_shift import PriorShiftWrapper, evidence_gate
+    from .._prior_shift import PriorShiftWrapper, evidence_gate, moved_prior
 
     src = np.asarray(source_prior, dtype=float)
     defaults = PriorShiftWrapper(None)
     weight, _ = evidence_gate(res, src.shape[0], defaults.max_harm, defaults.min_evidence)
-    moved = src + weight * (np.asarray(res.prior, dtype=float) - src) if weight > 0 else src
-    moved = moved / moved.sum()
+    moved = moved_prior(src, res.prior, weight)
     return weight, (moved if index is None else float(moved[index]))
