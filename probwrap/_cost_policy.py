@@ -19,7 +19,13 @@ from ._cost_policy_summary import (  # the prior-shift wrapper reads these two f
     _summary_interval,
 )
 from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, check_fitted, is_frozen
-from ._validation import check_labels, check_sample_weight, plain, power_of_two_unit
+from ._validation import (
+    check_labels,
+    check_sample_weight,
+    check_target_labels,
+    plain,
+    power_of_two_unit,
+)
 from .decision import (
     apply_class_offsets,
     budget_actions,
@@ -281,6 +287,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
                 f"{type(self).__name__} requires y to be passed, but the target y is None."
             )
         y_arr = column_or_1d(y, warn=True)
+        check_target_labels(y_arr, "y")
         check_classification_targets(y_arr)
         sw = check_sample_weight(sample_weight, y_arr.shape[0]) if sample_weight is not None else None
         y_index, classes = check_labels(y_arr, name="y")

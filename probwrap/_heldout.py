@@ -35,7 +35,7 @@ from sklearn.utils.validation import column_or_1d, has_fit_parameter
 
 from ._predictions import HeldOutPredictions
 from ._predictions import resolve_response as _resolve_response
-from ._validation import check_labels, check_sample_weight, plain
+from ._validation import check_labels, check_sample_weight, check_target_labels, plain
 
 __all__ = ["HeldOutClassifierBase", "HeldOutPredictions"]
 
@@ -197,6 +197,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             )
         fit_params = dict(fit_params or {})
         y_arr = column_or_1d(y, warn=True)
+        check_target_labels(y_arr, "y")
         check_classification_targets(y_arr)
         n = y_arr.shape[0]
         sw = check_sample_weight(sample_weight, n) if sample_weight is not None else None

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 import numbers
+import warnings
 from typing import Any
 
 import numpy as np
@@ -22,6 +23,7 @@ __all__ = [
     "check_same_length",
     "power_of_two_unit",
     "check_label_types",
+    "check_target_labels",
     "plain",
     "row_sum",
     "row_max",
@@ -171,12 +173,12 @@ def plain(value: Any) -> Any:
     return value
 
 
-def _label_kind(value: Any) -> str:
-    if isinstance(value, (numbers.Number, np.bool_)):
+def _type_kind(t: type) -> str:
+    if issubclass(t, (numbers.Number, np.bool_)):
         return "number"
-    if isinstance(value, str):
+    if issubclass(t, str):
         return "string"
-    return type(value).__name__
+    return t.__name__
 
 
 def check_label_types(arr: np.ndarray, name: str) -> None:
@@ -186,7 +188,8 @@ def check_label_types(arr: np.ndarray, name: str) -> None:
     """
     if arr.dtype.kind != "O":
         return
-    kinds = {_label_kind(v) for v in arr.ravel().tolist()}
+    # by type, not by value: a handful of types however many rows
+    kinds = {_type_kind(t) for t in set(map(type, arr.ravel().tolist()))}
     if len(kinds) > 1:
         raise ValueError(
             f"`{name}` mixes label types ({', '.join(sorted(kinds))}); labels must be all "
@@ -195,6 +198,61 @@ def check_label_types(arr: np.ndarray, name: str) -> None:
     if kinds - {"number", "string"}:
         raise ValueError(
             f"`{name}` holds labels of type {kinds.pop()}; labels must be numbers or strings."
+        )
+
+
+def _is_missing(value: Any) -> bool:
+    return value is None or (isinstance(value, (float, np.floating)) and value != value) or (
+        type(value).__name__ in ("NAType", "NaTType")
+    )
+
+
+def check_target_labels(y: np.ndarray, name: str = "y") -> None:
+    """Refuse labels that scikit-learn would reject with an unclear message.
+
+    Checked before scikit-learn's own target checks, so that the message names ``name``, the
+    first bad row and what to do: a missing label (NaN, ``None``, ``pd.NA``), labels that mix
+    numbers and strings (NumPy's sort fails with a bare ``TypeError``), and numbers or booleans
+    stored in an object array (scikit-learn calls their type "unknown").
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> check_target_labels(np.array(["a", "b"], dtype=object))
+    >>> try:
+    ...     check_target_labels(np.array([0, 1], dtype=object))
+    ... except ValueError as exc:
+    ...     print(str(exc)[:56])
+    Unknown label type: `y` holds numbers in an object array
+    """
+    arr = np.asarray(y)
+    if arr.dtype.kind == "f":
+        bad = np.isnan(arr)
+        if bad.any():
+            raise ValueError(
+                f"`{name}` contains {int(bad.sum())} NaN label(s) (first at row "
+                f"{int(np.flatnonzero(bad)[0])}); labels must be known for every row."
+            )
+        return
+    if arr.dtype.kind != "O":
+        return
+    values = arr.ravel().tolist()
+    # one pass over the types (a handful), then only the rows of a suspect type
+    types = set(map(type, values))
+    if any(t is type(None) or t.__name__ in ("NAType", "NaTType") or issubclass(t, float)
+           for t in types):
+        missing = [i for i, v in enumerate(values) if _is_missing(v)]
+        if missing:
+            raise ValueError(
+                f"`{name}` contains {len(missing)} missing label(s) (None or NaN; first at row "
+                f"{missing[0]}); labels must be known for every row."
+            )
+    check_label_types(arr, name)
+    if values and _type_kind(type(values[0])) == "number":
+        raise ValueError(
+            f"Unknown label type: `{name}` holds numbers in an object array (dtype=object), "
+            "which scikit-learn cannot read as class labels; pass them with a numeric dtype, "
+            f"e.g. `{name}.astype(int)` or `{name}.astype(bool)`."
         )
 
 
@@ -266,10 +324,19 @@ def check_binary_labels(y: Any, *, name: str = "y", classes: Any = None) -> tupl
     return idx.astype(float), classes_arr
 
 
+#: the largest weight outside [2**-256, 2**256] (about 1e-77 to 1e77) is rescaled: squares of
+#: such weights summed over a billion rows stay far inside the float range
+_WEIGHT_LOW = 2.0**-256
+_WEIGHT_HIGH = 2.0**256
+
+
 def check_sample_weight(sample_weight: Any, n: int, *, name: str = "sample_weight") -> np.ndarray:
     """Return weights as a float array of length ``n`` (ones when ``None``).
 
-    Weights must be finite, non-negative and not all zero.
+    Weights must be finite, non-negative and not all zero. When the largest weight lies outside
+    about [1e-77, 1e77] the weights are divided by a power of two (exact) with a
+    :class:`~probwrap.calibration.WeightScaleWarning`: no count of rows is that large or small,
+    and sums of their squares would overflow or underflow.
     """
     if sample_weight is None:
         return np.ones(n, dtype=float)
@@ -288,6 +355,23 @@ def check_sample_weight(sample_weight: Any, n: int, *, name: str = "sample_weigh
         raise ValueError(f"`{name}` must be non-negative; got a minimum of {sw.min():.6g}.")
     if not np.any(sw > 0):
         raise ValueError(f"`{name}` is zero for every row; at least one weight must be positive.")
+    top = float(sw.max())
+    if not _WEIGHT_LOW <= top <= _WEIGHT_HIGH:
+        # sums of squares (Kish's size, variances) overflow or underflow here: divide by a
+        # power of two (exact, the relative weights are unchanged), and say so
+        unit = power_of_two_unit(sw)
+        sw /= unit
+        from .calibration._base import WeightScaleWarning
+
+        warnings.warn(
+            f"`{name}` reaches {top:.3g}; weights this far from 1 overflow or underflow the "
+            f"sums of squares that weighted statistics need, so they are divided by 2**"
+            f"{math.frexp(unit)[1] - 1} (exact; the ratios between rows are unchanged, and "
+            "as row counts they now sum to "
+            f"{float(sw.sum()):.4g}).",
+            WeightScaleWarning,
+            stacklevel=3,
+        )
     return sw
 
 

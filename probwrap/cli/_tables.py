@@ -33,33 +33,93 @@ def read_table(path: str | Path, *, exact: Iterable[str] = ()) -> Any:
         raise DataError(f"{path}: file not found")
     if path.is_dir():
         raise DataError(f"{path}: is a folder, not a file")
+    suffix = path.suffix.lower()
+    if suffix in _NOT_TABLES:
+        raise DataError(
+            f"{path}: {_NOT_TABLES[suffix]} files are not read; save the table as CSV (UTF-8) "
+            "or Parquet (.csv, .parquet)"
+        )
     if table_kind(path) == "Parquet":
         require("pyarrow")
+    header: list[str] | None = None
     try:
         if table_kind(path) == "Parquet":
             frame = pd.read_parquet(path)
         else:
             exact = list(exact)
-            sep, decimal = _csv_dialect(path)
-            frame = pd.read_csv(path, dtype=dict.fromkeys(exact, str), sep=sep, decimal=decimal)
+            encoding = _csv_encoding(path)
+            sep, decimal = _csv_dialect(path, encoding)
+            frame = pd.read_csv(path, dtype=dict.fromkeys(exact, str), sep=sep, decimal=decimal,
+                                encoding=encoding)
             if decimal == ",":  # columns read as text keep their decimal commas: make them dots
                 for column in set(exact) & set(frame.columns):
                     frame[column] = frame[column].str.replace(",", ".", regex=False)
+            header = _csv_header(path, encoding, sep)
     except pd.errors.EmptyDataError:
         raise DataError(f"{path}: the file is empty") from None
+    except UnicodeDecodeError as exc:
+        raise DataError(
+            f"{path}: is not UTF-8 text (byte 0x{exc.object[exc.start]:02x} at position "
+            f"{exc.start} cannot be read); save it as CSV UTF-8 (or UTF-16 with a byte-order "
+            "mark), or as Parquet"
+        ) from None
     except (MemoryError, KeyboardInterrupt):
         raise
     except Exception as exc:  # parsing errors of any kind: report, do not trace back
         raise DataError(f"{path}: cannot be read as {table_kind(path)} ({one_line(exc)})") from None
+    names = header if header is not None else [str(c) for c in frame.columns]
+    # empty names (a trailing separator) become "Unnamed: k" and can be told apart
+    repeated = sorted({c for c in names if c.strip() and names.count(c) > 1})
+    if repeated:
+        # pandas renames the second of two equal names ("risk" -> "risk.1"): which one a flag
+        # meant cannot be told, so neither is picked
+        raise DataError(
+            f"{path}: the header names the column(s) {', '.join(shown(c) for c in repeated)} "
+            "more than once; rename them so that each column has its own name"
+        )
     if frame.shape[0] == 0:
         raise DataError(f"{path}: the file has a header but no rows")
     return frame
 
 
+#: extensions of files that are not tables this command reads, and what they are
+_NOT_TABLES = {
+    ".xlsx": "Excel", ".xlsm": "Excel", ".xls": "Excel", ".ods": "OpenDocument spreadsheet",
+    ".json": "JSON", ".feather": "Feather", ".arrow": "Arrow", ".pkl": "pickle",
+    ".pickle": "pickle", ".h5": "HDF5", ".hdf5": "HDF5",
+}
+
+
+def _csv_encoding(path: Path) -> str:
+    """UTF-16 when the file starts with a UTF-16 byte-order mark (spreadsheets' "Unicode text"),
+    UTF-8 otherwise (a UTF-8 byte-order mark is skipped)."""
+    try:
+        with open(path, "rb") as handle:
+            start = handle.read(2)
+    except OSError:
+        return "utf-8-sig"
+    return "utf-16" if start in (b"\xff\xfe", b"\xfe\xff") else "utf-8-sig"
+
+
+def _csv_header(path: Path, encoding: str, sep: str) -> list[str] | None:
+    """The column names as written in the first non-blank line of a CSV file (pandas renames
+    repeated names, so they are read here once more)."""
+    import csv
+
+    try:
+        with open(path, encoding=encoding, newline="") as handle:
+            for row in csv.reader(handle, delimiter=sep):
+                if any(field.strip() for field in row):
+                    return row
+    except (OSError, UnicodeError, csv.Error):
+        return None
+    return None
+
+
 _DECIMAL_COMMA = re.compile(r"(^|;)\s*-?\d+,\d+\s*(;|$)")
 
 
-def _csv_dialect(path: Path) -> tuple[str, str]:
+def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
     """Separator and decimal mark of a CSV file, from its first lines.
 
     Comma-separated unless the header has no comma but a semicolon or a tab (spreadsheets in
@@ -67,7 +127,7 @@ def _csv_dialect(path: Path) -> tuple[str, str]:
     comma when a field of the first data lines is a number written with one.
     """
     try:
-        with open(path, encoding="utf-8-sig", errors="replace") as handle:
+        with open(path, encoding=encoding, errors="replace") as handle:
             lines = [handle.readline() for _ in range(6)]
     except OSError:
         return ",", "."
@@ -90,10 +150,15 @@ def _columns_listed(frame: Any) -> str:
 
 
 def no_column(frame: Any, column: str, path: str | Path, flag: str) -> DataError:
-    """The error for a column that is not in the file."""
+    """The error for a column that is not in the file (naming a column whose name differs only
+    in surrounding spaces or in case, which is easy to miss in a spreadsheet)."""
+    key = str(column).strip().casefold()
+    near = [str(c) for c in frame.columns if str(c).strip().casefold() == key]
+    hint = (f" (the column {shown(near[0])} differs only in spaces or case: give its exact name, "
+            "in quotes)") if near else ""
     return DataError(
         f"{path}: no column {shown(column)} (given by {flag}); the file has columns "
-        f"{_columns_listed(frame)}"
+        f"{_columns_listed(frame)}{hint}"
     )
 
 

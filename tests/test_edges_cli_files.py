@@ -1,0 +1,105 @@
+"""Score files as spreadsheets and other programs save them, through the command line in-process:
+UTF-16 text with a byte-order mark, files in another encoding, a header that names a column
+twice, a spreadsheet file given instead of a table, and column names that differ only in case
+or surrounding spaces. Data: logistic-regression probabilities on scikit-learn's
+bundled breast cancer set, with the labels as the words "yes" / "no".
+"""
+
+from __future__ import annotations
+
+import zipfile
+
+import numpy as np
+import pandas as pd
+import pytest
+from sklearn.datasets import load_breast_cancer
+from sklearn.linear_model import LogisticRegression
+from sklearn.preprocessing import StandardScaler
+
+from probwrap.cli import main
+
+
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    import probwrap.cli._progress as progress
+
+    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+
+
+@pytest.fixture(scope="module")
+def table():
+    X, y = load_breast_cancer(return_X_y=True)
+    X = StandardScaler().fit_transform(X[:, :5])
+    p = LogisticRegression().fit(X, y).predict_proba(X)[:, 1]
+    return pd.DataFrame({"risk": p, "outcome": np.where(y == 1, "yes", "no")})
+
+
+def _cutoff(capsys, path, score="risk"):
+    code = main(["cutoff", "--scores", str(path), "--score-column", score, "--label-column",
+                 "outcome", "--positive-label", "yes", "--cost-fp", "1", "--cost-fn", "5",
+                 "--resamples", "0", "--format", "json"])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_utf16_file_reads_as_the_utf8_one(tmp_path, capsys, table):
+    """Spreadsheets' "Unicode text" is UTF-16 with a byte-order mark, often tab-separated; it
+    used to stop with "'utf-8' codec can't decode byte 0xff"."""
+    table.to_csv(tmp_path / "plain.csv", index=False)
+    with open(tmp_path / "wide.csv", "w", encoding="utf-16") as handle:
+        handle.write(table.to_csv(index=False, sep="\t"))
+    code_a, out_a, _ = _cutoff(capsys, tmp_path / "plain.csv")
+    code_b, out_b, err_b = _cutoff(capsys, tmp_path / "wide.csv")
+    assert code_a == code_b == 0, err_b
+    assert out_a.replace("plain.csv", "X") == out_b.replace("wide.csv", "X")
+
+
+def test_other_encoding_names_the_byte_and_what_to_do(tmp_path, capsys, table):
+    path = tmp_path / "latin.csv"
+    path.write_bytes(table.assign(outcome=np.where(table.outcome == "yes", "oui", "non"))
+                     .rename(columns={"outcome": "résultat"}).to_csv(index=False)
+                     .encode("latin-1"))
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "is not UTF-8 text (byte 0xe9 at position 6" in err
+    assert "save it as CSV UTF-8" in err and "Traceback" not in err
+
+
+def test_a_column_named_twice_is_refused(tmp_path, capsys, table):
+    """pandas reads "risk,risk" as "risk" and "risk.1": the first was used without a word."""
+    path = tmp_path / "twice.csv"
+    table[["risk", "risk", "outcome"]].to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "the header names the column(s) 'risk' more than once" in err
+
+
+def test_empty_names_from_trailing_separators_are_not_repeats(tmp_path, capsys, table):
+    path = tmp_path / "trailing.csv"
+    path.write_text("".join(line + ",,\n" for line in
+                            table.to_csv(index=False).splitlines()))
+    assert _cutoff(capsys, path)[0] == 0
+
+
+def test_spreadsheet_files_are_refused_by_extension(tmp_path, capsys):
+    path = tmp_path / "held.xlsx"
+    with zipfile.ZipFile(path, "w") as archive:
+        archive.writestr("xl/workbook.xml", "<workbook/>")
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "Excel files are not read; save the table as CSV (UTF-8) or Parquet" in err
+
+
+@pytest.mark.parametrize("flag, given, near", [("--score-column", "Risk", "risk"),
+                                               ("--label-column", "outcome ", "outcome")])
+def test_a_near_column_name_is_pointed_out(tmp_path, capsys, table, flag, given, near):
+    path = tmp_path / "held.csv"
+    table.to_csv(path, index=False)
+    columns = {"--score-column": "risk", "--label-column": "outcome", flag: given}
+    code = main(["cutoff", "--scores", str(path), *[x for kv in columns.items() for x in kv],
+                 "--positive-label", "yes", "--cost-fp", "1", "--cost-fn", "5",
+                 "--resamples", "0"])
+    err = capsys.readouterr().err
+    assert code == 1
+    assert f"no column '{given}' (given by {flag})" in err
+    assert f"(the column '{near}' differs only in spaces or case" in err
