@@ -127,6 +127,12 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         cv = self.cv
         if cv is None:
             cv = 5
+        if isinstance(cv, str) and cv == "prefit":
+            raise ValueError(
+                "`cv='prefit'` is not used by probwrap: to calibrate or tune an already fitted "
+                "model without refitting it, wrap it in sklearn.frozen.FrozenEstimator and pass "
+                "that as `estimator` (the rows given to fit are then all held out)."
+            )
         if isinstance(cv, numbers.Integral) and not isinstance(cv, bool):
             if cv < 2:
                 raise ValueError(f"`cv` must be at least 2 folds; got {cv}.")
@@ -205,6 +211,12 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
 
         if is_frozen(self.estimator):
             estimator = self.estimator
+            if not hasattr(estimator.estimator, "classes_"):
+                raise ValueError(
+                    f"`estimator` is a FrozenEstimator around an unfitted "
+                    f"{type(estimator.estimator).__name__} (it has no classes_); fit the model "
+                    "first, or pass it unwrapped to have it cross-fitted here."
+                )
             est_classes = np.asarray(estimator.classes_)
             y_index, _ = check_labels(y_arr, name="y", classes=est_classes, min_classes=1)
             if np.unique(y_index).shape[0] < 2:

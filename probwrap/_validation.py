@@ -207,13 +207,14 @@ def _is_missing(value: Any) -> bool:
     )
 
 
-def check_target_labels(y: np.ndarray, name: str = "y") -> None:
+def check_target_labels(y: np.ndarray, name: str = "y", *, object_numbers: bool = False) -> None:
     """Refuse labels that scikit-learn would reject with an unclear message.
 
     Checked before scikit-learn's own target checks, so that the message names ``name``, the
     first bad row and what to do: a missing label (NaN, ``None``, ``pd.NA``), labels that mix
     numbers and strings (NumPy's sort fails with a bare ``TypeError``), and numbers or booleans
-    stored in an object array (scikit-learn calls their type "unknown").
+    stored in an object array (scikit-learn calls their type "unknown"; allowed with
+    ``object_numbers=True`` where nothing is handed to scikit-learn).
 
     Examples
     --------
@@ -248,7 +249,7 @@ def check_target_labels(y: np.ndarray, name: str = "y") -> None:
                 f"{missing[0]}); labels must be known for every row."
             )
     check_label_types(arr, name)
-    if values and _type_kind(type(values[0])) == "number":
+    if not object_numbers and values and _type_kind(type(values[0])) == "number":
         raise ValueError(
             f"Unknown label type: `{name}` holds numbers in an object array (dtype=object), "
             "which scikit-learn cannot read as class labels; pass them with a numeric dtype, "

@@ -100,3 +100,35 @@ def test_weight_rescale_keeps_ratios_and_leaves_input_alone():
         warnings.simplefilter("error")  # ordinary weights: no warning, unchanged values
         np.testing.assert_array_equal(check_sample_weight([1e-70, 3.0, 1e70], 3),
                                       [1e-70, 3.0, 1e70])
+
+
+@pytest.mark.parametrize(
+    "labels, row",
+    [(np.array(["a", "b", None, "a"], dtype=object), 2),
+     (pd.Series(["a", "b", "a", None], dtype="string"), 3)],
+)
+def test_metrics_name_the_row_of_a_missing_label(labels, row):
+    """Before: "`y_true` mixes label types (NoneType, string)"."""
+    from probwrap.metrics import brier_score
+
+    with pytest.raises(ValueError, match=rf"`y_true` contains 1 missing label\(s\) \(None or "
+                                         rf"NaN; first at row {row}\)"):
+        brier_score(labels, [0.1, 0.8, 0.3, 0.2], labels=["a", "b"])
+    # numbers in an object array are fine for the metrics (nothing goes to scikit-learn)
+    assert brier_score(np.array([0, 1, 1, 0], dtype=object), [0.0, 1.0, 1.0, 0.0]) == 0.0
+
+
+@pytest.mark.parametrize("wrapper", sorted(WRAPPERS))
+def test_unfitted_frozen_model_is_named(cancer, wrapper):
+    """Before: AttributeError "'LogisticRegression' object has no attribute 'classes_'"."""
+    X, y, _ = cancer
+    with pytest.raises(ValueError, match="FrozenEstimator around an unfitted LogisticRegression"):
+        WRAPPERS[wrapper](LogisticRegression()).fit(X, y)
+
+
+def test_cv_prefit_points_to_frozen_estimator(cancer):
+    """scikit-learn's older spelling for a fitted model; before, probwrap passed on check_cv's
+    "Expected `cv` as an integer, ..." without saying what to use instead."""
+    X, y, model = cancer
+    with pytest.raises(ValueError, match="wrap it in sklearn.frozen.FrozenEstimator"):
+        CalibrationWrapper(model, cv="prefit").fit(X, y)

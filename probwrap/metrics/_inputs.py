@@ -16,11 +16,11 @@ import numpy as np
 
 from .._validation import (
     check_binary_labels,
-    check_label_types,
     check_labels,
     check_proba,
     check_same_length,
     check_sample_weight,
+    check_target_labels,
     plain,
 )
 from ..calibration._base import WeightScaleWarning, count_weights
@@ -47,9 +47,8 @@ def _label_array(y_true: Any) -> np.ndarray:
         raise ValueError(f"`y_true` must be 1-d of shape (n,); got shape {arr.shape}.")
     if arr.shape[0] == 0:
         raise ValueError("`y_true` is empty; at least one row is needed.")
-    if arr.dtype.kind == "f" and np.isnan(arr).any():
-        raise ValueError("`y_true` contains NaN; labels must be known for every row.")
-    check_label_types(arr, "y_true")
+    # NaN, None or pd.NA named with the first row; mixed numbers and text refused
+    check_target_labels(arr, "y_true", object_numbers=True)
     return arr
 
 
