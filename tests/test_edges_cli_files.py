@@ -103,3 +103,19 @@ def test_a_near_column_name_is_pointed_out(tmp_path, capsys, table, flag, given,
     assert code == 1
     assert f"no column '{given}' (given by {flag})" in err
     assert f"(the column '{near}' differs only in spaces or case" in err
+
+
+@pytest.mark.parametrize("name", ["", "   "])
+def test_empty_output_column_is_a_usage_error(tmp_path, capsys, table, name):
+    """Before, an empty name was written as an empty header cell (read back as "Unnamed: 2")."""
+    table.to_csv(tmp_path / "held.csv", index=False)
+    assert main(["calibrate", "fit", "--scores", str(tmp_path / "held.csv"), "--score-column",
+                 "risk", "--label-column", "outcome", "--positive-label", "yes", "--method",
+                 "platt", "--out", str(tmp_path / "map.json")]) == 0
+    with pytest.raises(SystemExit) as info:
+        main(["calibrate", "apply", "--map", str(tmp_path / "map.json"), "--scores",
+              str(tmp_path / "held.csv"), "--score-column", "risk", "--output-column", name,
+              "--out", str(tmp_path / "out.csv")])
+    assert info.value.code == 2
+    assert "--output-column" in capsys.readouterr().err
+    assert not (tmp_path / "out.csv").exists()

@@ -354,6 +354,10 @@ def register(subparsers: Any) -> None:
                        help="output file: .csv, .parquet or .pq")
 
     def run_apply(args: argparse.Namespace) -> int:
+        if not args.output_column.strip():
+            # an empty name is written as an empty header cell, read back as "Unnamed: k"
+            apply.error(f"--output-column {args.output_column!r}: give a name with at least "
+                        "one visible character")
         check_out_suffix(apply, args.out, TABLE_SUFFIXES)
         check_writable(args.out)
         return _apply(args)
