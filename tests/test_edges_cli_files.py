@@ -119,3 +119,51 @@ def test_empty_output_column_is_a_usage_error(tmp_path, capsys, table, name):
     assert info.value.code == 2
     assert "--output-column" in capsys.readouterr().err
     assert not (tmp_path / "out.csv").exists()
+
+
+@pytest.fixture(scope="module")
+def wine_probabilities():
+    """Out-of-fold class probabilities of a logistic regression on scikit-learn's wine set."""
+    from sklearn.datasets import load_wine
+    from sklearn.model_selection import cross_val_predict
+
+    X, y = load_wine(return_X_y=True)
+    P = cross_val_predict(LogisticRegression(), StandardScaler().fit_transform(X), y, cv=3,
+                          method="predict_proba")
+    names = np.array(["barolo", "grignolino", "barbera"])
+    frame = pd.DataFrame(P, columns=names)
+    frame["cultivar"] = names[y]
+    return frame
+
+
+def _class_report(path, out, columns="barolo,grignolino,barbera"):
+    return main(["report", "--scores", str(path), "--class-columns", columns, "--label-column",
+                 "cultivar", "--resamples", "10", "--out", str(out)])
+
+
+def test_class_without_or_with_few_labelled_rows_is_named(tmp_path, capsys, wine_probabilities):
+    """Before, a class of --class-columns with no labelled row (or one) passed without a word;
+    the page only showed a share of 0.0%."""
+    frame = wine_probabilities
+    absent = frame[frame.cultivar != "barbera"]
+    one = pd.concat([absent, frame[frame.cultivar == "barbera"].iloc[:1]])
+    absent.to_csv(tmp_path / "absent.csv", index=False)
+    one.to_csv(tmp_path / "one.csv", index=False)
+    assert _class_report(tmp_path / "absent.csv", tmp_path / "a.html") == 0
+    assert "class(es) 'barbera' have no labelled rows" in capsys.readouterr().err
+    assert _class_report(tmp_path / "one.csv", tmp_path / "b.html") == 0
+    assert "fewer than 5 labelled rows: 'barbera' (1)" in capsys.readouterr().err
+
+
+def test_class_columns_named_otherwise_than_the_labels(tmp_path, capsys, wine_probabilities):
+    frame = wine_probabilities.rename(columns=lambda c: c if c == "cultivar" else f"p {c}")
+    frame.to_csv(tmp_path / "held.csv", index=False)
+    assert _class_report(tmp_path / "held.csv", tmp_path / "r.html",
+                         "p barolo,p grignolino,p barbera") == 1
+    err = capsys.readouterr().err
+    assert "--class-columns must list columns named as the labels" in err
+    assert "(the file's labels: 'barolo', 'grignolino', 'barbera')" in err
+    with pytest.raises(SystemExit) as info:
+        _class_report(tmp_path / "held.csv", tmp_path / "r.html", "p barolo,p barolo,p barbera")
+    assert info.value.code == 2
+    assert "--class-columns names 'p barolo' more than once" in capsys.readouterr().err

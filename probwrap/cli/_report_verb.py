@@ -22,6 +22,7 @@ from ._common import (
     clean,
     require,
     shown,
+    warn_line,
     whole_number,
 )
 from ._files import check_out_suffix, check_writable, write_text
@@ -150,6 +151,10 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
     columns = _split(args.class_columns)
     if len(columns) < 2:
         parser.error("--class-columns needs at least two columns")
+    twice = sorted({c for c in columns if columns.count(c) > 1})
+    if twice:
+        parser.error(f"--class-columns names {', '.join(shown(c) for c in twice)} more than "
+                     "once; name each class's column once")
     if any(getattr(args, f"cost_{k}") is not None for k in ("fp", "fn")):
         parser.error("with --class-columns give costs as --cost-matrix, not --cost-fp/--cost-fn")
     if args.batch_size is not None:
@@ -207,6 +212,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         if args.unlabelled is not None:
             q = probabilities(args.unlabelled, read_table(args.unlabelled, exact=columns))
         check_row_count("report", P.shape[0], args.scores, "labelled rows")
+        _check_class_rows(y, columns, args.scores)
         if q is not None:
             check_row_count("report", q.shape[0], args.unlabelled, "unlabelled rows")
         extra = {}
@@ -229,6 +235,26 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
     return 0
 
 
+#: fewer labelled rows of a class than this draw a warning (as the calibration wrapper's)
+FEW_CLASS_ROWS = 5
+
+
+def _check_class_rows(y: np.ndarray, columns: list[str], path: str) -> None:
+    """Warn about classes with no or very few labelled rows: the report's per-class numbers
+    for them are missing or rest on a handful of rows."""
+    counts = np.bincount(y, minlength=len(columns))
+    absent = [shown(columns[j]) for j in np.flatnonzero(counts == 0)]
+    few = [f"{shown(columns[j])} ({int(counts[j])})"
+           for j in np.flatnonzero((counts > 0) & (counts < FEW_CLASS_ROWS))]
+    if absent:
+        warn_line("report", f"{path}: class(es) {', '.join(absent)} have no labelled rows; "
+                  "their calibration and the cost of deciding on them are not checked by this "
+                  "file")
+    if few:
+        warn_line("report", f"{path}: class(es) with fewer than {FEW_CLASS_ROWS} labelled rows: "
+                  f"{', '.join(few)}; their per-class numbers rest on those rows alone")
+
+
 def _class_labels(frame, args: argparse.Namespace, columns: list[str]) -> np.ndarray:
     pd = require("pandas")
     if args.label_column not in frame.columns:
@@ -249,7 +275,13 @@ def _class_labels(frame, args: argparse.Namespace, columns: list[str]) -> np.nda
             raise DataError(
                 f"{args.scores}: column {shown(args.label_column)}, row {row + 2} (counting the "
                 f"header as row 1): label {shown(raw.iloc[row])} is not one of the class columns "
-                f"{', '.join(columns)}"
+                f"{', '.join(columns)}" + (
+                    "" if named.any() else
+                    # nothing matches: the columns are probably named otherwise than the labels
+                    "; the labels name the classes, so --class-columns must list columns named "
+                    f"as the labels (the file's labels: "
+                    f"{', '.join(shown(v) for v in pd.unique(as_text)[:6])})"
+                )
             )
         return np.array([columns.index(v) for v in as_text], dtype=np.intp)
     y = numeric_column(frame, args.label_column, args.scores, flag="--label-column")
