@@ -20,7 +20,6 @@ __all__ = [
     "check_labels",
     "check_binary_labels",
     "check_sample_weight",
-    "extreme_weight_unit",
     "check_same_length",
     "power_of_two_unit",
     "check_label_types",
@@ -332,16 +331,6 @@ _WEIGHT_LOW = 2.0**-256
 _WEIGHT_HIGH = 2.0**256
 
 
-def extreme_weight_unit(sample_weight: np.ndarray) -> float:
-    """The power of two that :func:`check_sample_weight` divides ``sample_weight`` by: 1.0
-    unless the largest weight lies outside ``[2**-256, 2**256]`` (for code that must treat
-    checked and unchecked copies of the same weights alike)."""
-    top = float(np.max(sample_weight)) if np.size(sample_weight) else 1.0
-    if top <= 0.0 or not math.isfinite(top) or _WEIGHT_LOW <= top <= _WEIGHT_HIGH:
-        return 1.0
-    return power_of_two_unit(sample_weight)
-
-
 def check_sample_weight(sample_weight: Any, n: int, *, name: str = "sample_weight") -> np.ndarray:
     """Return weights as a float array of length ``n`` (ones when ``None``).
 
@@ -367,11 +356,11 @@ def check_sample_weight(sample_weight: Any, n: int, *, name: str = "sample_weigh
         raise ValueError(f"`{name}` must be non-negative; got a minimum of {sw.min():.6g}.")
     if not np.any(sw > 0):
         raise ValueError(f"`{name}` is zero for every row; at least one weight must be positive.")
-    unit = extreme_weight_unit(sw)
-    if unit != 1.0:
+    top = float(sw.max())
+    if not _WEIGHT_LOW <= top <= _WEIGHT_HIGH:
         # sums of squares (Kish's size, variances) overflow or underflow here: divide by a
         # power of two (exact, the relative weights are unchanged), and say so
-        top = float(sw.max())
+        unit = power_of_two_unit(sw)
         sw /= unit
         from .calibration._base import WeightScaleWarning
 

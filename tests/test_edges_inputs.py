@@ -132,28 +132,3 @@ def test_cv_prefit_points_to_frozen_estimator(cancer):
     X, y, model = cancer
     with pytest.raises(ValueError, match="wrap it in sklearn.frozen.FrozenEstimator"):
         CalibrationWrapper(model, cv="prefit").fit(X, y)
-
-
-@pytest.mark.parametrize("band", ["wilson", "consistency"])
-@pytest.mark.parametrize("exponent", [70, 300])
-def test_reliability_band_with_equal_huge_weights_is_the_unweighted_band(cancer, band, exponent):
-    """Equal weights 2**70 cannot be row frequencies (no data have 2**62 rows): before, the
-    diagram stopped with "`sample_weight` must be below 2**62", and 2**300 did so after the table
-    had warned that the weights were rescaled. Equal weights must now give the unweighted band
-    exactly (Kish's size of equal weights is the row count; 2**300 / 2**300 is exactly 1)."""
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from probwrap.plot import ReliabilityDiagram
-
-    X, y, model = cancer
-    p = model.predict_proba(X)[:, 1]
-    ref = ReliabilityDiagram.from_predictions(y, p, band=band)
-    with pytest.warns(WeightScaleWarning):
-        got = ReliabilityDiagram.from_predictions(y, p, band=band,
-                                                  sample_weight=np.full(y.size, 2.0**exponent))
-    plt.close("all")
-    np.testing.assert_array_equal(got.band_low, ref.band_low)
-    np.testing.assert_array_equal(got.band_high, ref.band_high)

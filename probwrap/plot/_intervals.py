@@ -10,7 +10,7 @@ import numpy as np
 from scipy.stats import norm
 from sklearn.utils import check_random_state
 
-from .._validation import extreme_weight_unit, plain, power_of_two_unit
+from .._validation import plain
 
 __all__ = ["wilson_interval", "consistency_band", "bin_counts"]
 
@@ -86,20 +86,9 @@ def _frequencies(sample_weight: Any, n: int, what: str) -> tuple[np.ndarray, boo
         raise ValueError(f"`sample_weight` must have shape ({n},); got {w.shape}.")
     if not np.all(np.isfinite(w)) or np.any(w < 0):
         raise ValueError("`sample_weight` must be finite and non-negative.")
-    # the same exact power-of-two division as check_sample_weight (which warned about it)
-    w = w / extreme_weight_unit(w)
     if float(w.max(initial=0.0)) >= 2.0**62:
-        # no data have 2**62 rows: such weights cannot be frequencies (and the band simulates
-        # that many outcomes); treat them as relative weights summing to Kish's size
-        u = w / power_of_two_unit(w)
-        kish = float(u.sum()) ** 2 / float(np.dot(u, u))
-        warnings.warn(
-            f"`sample_weight` reaches {float(w.max()):.3g}, more rows than any data have, so it "
-            "cannot be row frequencies; it was rescaled to sum to Kish's effective sample size "
-            f"({kish:.4g}) for {what}.",
-            WeightScaleWarning, stacklevel=4,
-        )
-        return u * (kish / float(u.sum())), True
+        raise ValueError("`sample_weight` must be below 2**62: each weight counts the rows a "
+                         "row stands for, and the band simulates that many outcomes.")
     w, rescaled = count_weights(w)
     if rescaled:
         warnings.warn(
@@ -123,8 +112,6 @@ def bin_counts(bin_weight: Any, sample_weight: Any) -> np.ndarray:
     if sample_weight is None:
         return bin_weight
     w = np.asarray(sample_weight, dtype=float)
-    # the table's weights went through check_sample_weight: divide these the same way
-    w = w / extreme_weight_unit(w)
     counted, rescaled = _frequencies(w, w.shape[0], "the interval counts")
     return bin_weight * (counted.sum() / w.sum()) if rescaled else bin_weight
 
