@@ -35,7 +35,13 @@ from sklearn.utils.validation import column_or_1d, has_fit_parameter
 
 from ._predictions import HeldOutPredictions
 from ._predictions import resolve_response as _resolve_response
-from ._validation import check_labels, check_sample_weight, check_target_labels, plain
+from ._validation import (
+    check_labels,
+    check_sample_weight,
+    check_target_labels,
+    plain,
+    rescale_extreme_weights,
+)
 
 __all__ = ["HeldOutClassifierBase", "HeldOutPredictions"]
 
@@ -206,7 +212,9 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         check_target_labels(y_arr, "y")
         check_classification_targets(y_arr)
         n = y_arr.shape[0]
-        sw = check_sample_weight(sample_weight, n) if sample_weight is not None else None
+        sw = None
+        if sample_weight is not None:
+            sw = rescale_extreme_weights(check_sample_weight(sample_weight, n), type(self).__name__)
         response = _resolve_response(self.estimator, response or self._heldout_response)
 
         if is_frozen(self.estimator):

@@ -19,7 +19,11 @@ from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 
 from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
-from probwrap._validation import check_sample_weight, check_target_labels
+from probwrap._validation import (
+    check_sample_weight,
+    check_target_labels,
+    rescale_extreme_weights,
+)
 from probwrap.calibration import WeightScaleWarning
 
 
@@ -88,17 +92,17 @@ def test_weights_far_from_one_are_rescaled_exactly_with_a_warning(cancer, expone
 
 
 def test_weight_rescale_keeps_ratios_and_leaves_input_alone():
-    w = np.array([1e300, 2e300, 0.0, 4e299])
+    w = check_sample_weight(np.array([1e300, 2e300, 0.0, 4e299]), 4)
     before = w.copy()
-    with pytest.warns(WeightScaleWarning, match="reaches 2e\\+300"):
-        out = check_sample_weight(w, 4)
+    with pytest.warns(WeightScaleWarning, match="Demo: `sample_weight` reaches 2e\\+300"):
+        out = rescale_extreme_weights(w, "Demo")
     np.testing.assert_array_equal(w, before)
     assert 1.0 <= out.max() < 2.0
     # division by a power of two is exact: the ratios are those of the input, bit for bit
     np.testing.assert_array_equal(out / out[0], w / w[0])
     with warnings.catch_warnings():
         warnings.simplefilter("error")  # ordinary weights: no warning, unchanged values
-        np.testing.assert_array_equal(check_sample_weight([1e-70, 3.0, 1e70], 3),
+        np.testing.assert_array_equal(rescale_extreme_weights(np.array([1e-70, 3.0, 1e70]), "D"),
                                       [1e-70, 3.0, 1e70])
 
 
