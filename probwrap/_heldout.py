@@ -232,6 +232,17 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     "`y` contains only 1 class; the held-out rows must contain at least two "
                     "classes."
                 )
+            absent = np.setdiff1d(np.arange(est_classes.shape[0]), y_index)
+            if absent.size:
+                names = ", ".join(repr(plain(est_classes[j])) for j in absent[:5])
+                warnings.warn(
+                    f"{type(self).__name__}: class(es) {names} of the frozen model have no "
+                    "held-out rows in `y`; nothing fitted here is checked on them (their "
+                    "probabilities follow the model and the map fitted on the other classes). "
+                    "Hold out labelled rows of every class.",
+                    UserWarning,
+                    stacklevel=3,
+                )
             # the labels wait as one-byte (or two-byte) codes while the model predicts
             y_index = y_index.astype(np.min_scalar_type(est_classes.shape[0] - 1))
             values = _predict_in_chunks(getattr(estimator, response), X)

@@ -136,3 +136,19 @@ def test_cv_prefit_points_to_frozen_estimator(cancer):
     X, y, model = cancer
     with pytest.raises(ValueError, match="wrap it in sklearn.frozen.FrozenEstimator"):
         CalibrationWrapper(model, cv="prefit").fit(X, y)
+
+
+@pytest.mark.parametrize("method", ["auto", "temperature"])
+def test_frozen_model_class_without_heldout_rows_warns(method):
+    """scikit-learn's wine set, class 2 left out of the held-out rows: temperature scaling (and
+    `auto`, which chose it) fitted on the other classes without a word."""
+    from sklearn.datasets import load_wine
+    from sklearn.preprocessing import StandardScaler
+
+    X, y = load_wine(return_X_y=True)
+    X = StandardScaler().fit_transform(X)
+    model = LogisticRegression().fit(X, y)
+    keep = y != 2
+    with pytest.warns(UserWarning, match=r"class\(es\) 2 of the frozen model have no held-out "
+                                         r"rows in `y`"):
+        CalibrationWrapper(FrozenEstimator(model), method=method).fit(X[keep], y[keep])
