@@ -232,7 +232,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     "`y` contains only 1 class; the held-out rows must contain at least two "
                     "classes."
                 )
-            absent = np.setdiff1d(np.arange(est_classes.shape[0]), y_index)
+            absent = np.flatnonzero(np.bincount(y_index, minlength=est_classes.shape[0]) == 0)
             if absent.size:
                 names = ", ".join(repr(plain(est_classes[j])) for j in absent[:5])
                 warnings.warn(
