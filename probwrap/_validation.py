@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import math
 import numbers
-import warnings
 from typing import Any
 
 import numpy as np
@@ -20,7 +19,6 @@ __all__ = [
     "check_labels",
     "check_binary_labels",
     "check_sample_weight",
-    "rescale_extreme_weights",
     "check_same_length",
     "power_of_two_unit",
     "check_label_types",
@@ -349,49 +347,6 @@ def check_sample_weight(sample_weight: Any, n: int, *, name: str = "sample_weigh
     if not np.any(sw > 0):
         raise ValueError(f"`{name}` is zero for every row; at least one weight must be positive.")
     return sw
-
-
-#: the wrappers rescale weights whose largest entry lies outside [2**-256, 2**256] (about 1e-77
-#: to 1e77): squares of the rescaled weights summed over a billion rows stay far inside the float
-#: range
-_WEIGHT_LOW = 2.0**-256
-_WEIGHT_HIGH = 2.0**256
-
-
-def rescale_extreme_weights(sw: np.ndarray, owner: str, name: str = "sample_weight") -> np.ndarray:
-    """Checked weights divided by a power of two (exact) when the largest lies outside about
-    [1e-77, 1e77], with a :class:`~probwrap.calibration.WeightScaleWarning` naming ``owner``.
-
-    The wrappers' steps sum squares of weights (Kish's size, variances, Newton steps), which
-    overflow or underflow there: without this, weights of 2**1000 stopped ``method="auto"``
-    with a ZeroDivisionError and gave ``PriorShiftWrapper`` a NaN prior. No data have that many
-    (or that few) rows, so the weights are taken as relative ones; the ratios between rows are
-    unchanged. The array-level maps and metrics keep such weights as given (frequencies).
-
-    Examples
-    --------
-    >>> import warnings
-    >>> with warnings.catch_warnings():
-    ...     warnings.simplefilter("ignore")
-    ...     rescale_extreme_weights(np.array([2.0**300, 2.0**301]), "Demo").tolist()
-    [0.5, 1.0]
-    """
-    top = float(sw.max()) if sw.size else 1.0
-    if top <= 0.0 or _WEIGHT_LOW <= top <= _WEIGHT_HIGH:
-        return sw
-    unit = power_of_two_unit(sw)
-    out = sw / unit
-    from .calibration._base import WeightScaleWarning
-
-    warnings.warn(
-        f"{owner}: `{name}` reaches {top:.3g}; weights this far from 1 overflow or underflow "
-        f"the sums of squares the fit needs, so they are divided by 2**"
-        f"{math.frexp(unit)[1] - 1} (exact; the ratios between rows are unchanged, and as row "
-        f"counts they now sum to {float(out.sum()):.4g}).",
-        WeightScaleWarning,
-        stacklevel=4,
-    )
-    return out
 
 
 def power_of_two_unit(values: Any) -> float:

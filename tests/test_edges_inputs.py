@@ -19,11 +19,8 @@ from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 
 from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
-from probwrap._validation import (
-    check_sample_weight,
-    check_target_labels,
-    rescale_extreme_weights,
-)
+from probwrap._heldout import rescale_extreme_weights
+from probwrap._validation import check_sample_weight, check_target_labels
 from probwrap.calibration import WeightScaleWarning
 
 
