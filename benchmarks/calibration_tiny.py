@@ -27,8 +27,8 @@ fertility as in ``benchmarks/small_data_sweep.py``; ``--sets fresh`` the sets of
 statsmodels; needs ``pip install -e ".[sweep]"``), used to check a rule chosen on the grid on
 data it was not chosen on. Base models and splits as in ``benchmarks/calibration.py``.
 
-Run: ``nice python benchmarks/calibration_tiny.py --sets grid --save tiny_grid.json`` (about
-15 minutes of CPU), then ``python benchmarks/calibration_tiny.py --load tiny_grid.json
+Run: ``nice python benchmarks/calibration_tiny.py --sets grid --draws 5 --save tiny_grid.json``
+(the docs' run: about 20 minutes on a shared machine; ``--sets fresh --draws 3`` about 10), then ``python benchmarks/calibration_tiny.py --load tiny_grid.json
 --rules``. ``--sizes 20,40`` and ``--draws 10`` set the grid; ``--part I/N`` runs every N-th
 data set starting at I.
 """
