@@ -13,6 +13,13 @@ from ._isotonic import _pool_ties
 
 __all__ = ["BinningMap"]
 
+#: A group of tied scores whose cumulative-weight midpoint, in units of one bin's share, lies
+#: within this of a bin boundary goes to the upper bin, as it would in exact arithmetic. The
+#: rounding of weights rescaled from another scale is about 1e-16 per row and of the cumulative
+#: sum at most about 1e-16 times the number of rows, far below it; a midpoint that lies truly
+#: this close below a boundary needs about 10^9 rows per bin.
+_EDGE_TOLERANCE = 1e-9
+
 
 class BinningMap(CalibrationMap):
     """Histogram binning: the calibrated probability is the smoothed positive rate of a bin.
@@ -124,8 +131,13 @@ class BinningMap(CalibrationMap):
         total = weight.sum()
         before = np.cumsum(weight) - weight
         midpoint_share = (before + 0.5 * weight) / total
+        # a midpoint within _EDGE_TOLERANCE of a bin boundary counts as on it: weights given
+        # on another scale (normalised to sum 1, or times 1e-3) differ in their last bits, and
+        # a group whose midpoint lies exactly on a boundary (common with integer-ratio
+        # weights) must not move to another bin with them
         bin_of_group = np.minimum(
-            np.floor(self.n_bins * midpoint_share).astype(np.int64), self.n_bins - 1
+            np.floor(self.n_bins * midpoint_share + _EDGE_TOLERANCE).astype(np.int64),
+            self.n_bins - 1,
         )
         # renumber the non-empty bins 0, 1, ... (bin numbers rise with the score)
         new_bin = np.ones(distinct.shape[0], dtype=bool)
