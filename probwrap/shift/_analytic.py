@@ -21,10 +21,11 @@ with :math:`A = \\partial\\bar\\psi_t/\\partial\\pi` (minus the observed informa
 :math:`D = \\partial\\bar\\psi_t/\\partial\\eta`, :math:`V_t` the covariance of the per-row scores,
 and :math:`\\Sigma_\\eta` the sandwich covariance of :math:`\\hat\\eta` from the labelled rows —
 the only thing the labelled rows contribute, so a fitted estimator keeps that small matrix
-instead of the rows. The interval of each class share is the normal interval on the logit
-scale of the share, :math:`\\operatorname{expit}(\\operatorname{logit}\\hat\\pi_c \\pm z\\,
-\\mathrm{se}_c / (\\hat\\pi_c(1-\\hat\\pi_c)))` (:func:`share_interval`; the caller widens it to at
-least the Clopper-Pearson interval on the unlabelled rows, as every interval here).
+instead of the rows. The interval of each class share is the score (Wilson) interval of a
+proportion on the effective number of rows :math:`n_c = \\hat\\pi_c(1-\\hat\\pi_c)/\\mathrm{se}_c^2`
+that the delta-method variance implies (:func:`share_interval`, which also gives the normal
+interval on the logit scale; the caller widens it to at least the Clopper-Pearson interval on
+the unlabelled rows, as every interval here).
 """
 
 from __future__ import annotations
@@ -204,14 +205,18 @@ def interval_from_sums(
 
 
 #: Shape of the per-share interval of :func:`share_interval` used by default.
-SHARE_INTERVAL_SHAPE = "logit"
+SHARE_INTERVAL_SHAPE = "wilson"
 
 
 def share_interval(pi: np.ndarray, cov: np.ndarray, confidence_level: float,
                    shape: str | None = None) -> np.ndarray:
-    """Per-share interval from the delta-method covariance ``cov`` of the shares ``pi``, on
-    the logit scale of each share.
+    """Per-share interval from the delta-method covariance ``cov`` of the shares ``pi``: the
+    score (Wilson) interval on the implied effective row count (``shape="wilson"``, the
+    default) or the normal interval on the logit scale of each share (``shape="logit"``).
+    ``benchmarks/shift.py --only=multiclass`` compares both on the same estimates: the same
+    coverage cells on its grid, the Wilson shape 20-33 % narrower for a share near 0.
 
+    ``shape="logit"``:
     The delta method applied to ``logit(pi_c) = log(pi_c / (1 - pi_c))`` — the log-ratio of
     the share against all other classes together — gives the standard error ``se_c / (pi_c
     (1 - pi_c))`` there; the normal interval on that scale, mapped back by the logistic

@@ -103,7 +103,7 @@ class PriorEstimator(_Resampling):
     interval : {"score", "bca", "percentile"}, default="score"
         ``"score"``: for two classes, the inverted two-sample score test
         (:func:`score_interval`; no resampling, both samples' error included, honest at the
-        edges); for more classes with ``method="em"`` the delta-method interval (logit scale) on
+        edges); for more classes with ``method="em"`` the delta-method interval (Wilson shape) on
         the EM fixed point, whose variance stacks the unlabelled rows' score with the labelled
         rows' estimating equations of the calibration and the source prior (the M-estimator
         sandwich; no resampling); other multiclass methods fall back to ``"bca"``. ``"bca"``:
