@@ -56,10 +56,23 @@ SLOW_TESTS = (
 )
 
 
+# Test files that share one expensive session fixture: under pytest-xdist (``--dist loadgroup``,
+# pyproject's addopts) each group runs on one worker, so the run starts one Spark JVM, not two.
+XDIST_GROUPS = {
+    "tests/test_spark_scale.py::": "spark",
+    "tests/test_spark_multiclass.py::": "spark",
+}
+
+
+# tryfirst: the group marks must be on the items before xdist's own hook reads them
+@pytest.hookimpl(tryfirst=True)
 def pytest_collection_modifyitems(config, items):
     for item in items:
         if item.nodeid.startswith(SLOW_TESTS):
             item.add_marker(pytest.mark.slow)
+        for prefix, group in XDIST_GROUPS.items():
+            if item.nodeid.startswith(prefix):
+                item.add_marker(pytest.mark.xdist_group(group))
 
 
 def _ci() -> bool:
@@ -100,7 +113,33 @@ def _modules_from_source_tree():
     return found
 
 
+def _in_xdist_worker(config) -> bool:
+    return hasattr(config, "workerinput")
+
+
+# Under pytest-xdist the tests import probwrap in the worker processes, not in the controller
+# that prints the summary: each worker sends the modules it imported from the source tree, and
+# the controller checks them with its own (a run without xdist has only its own).
+_WORKER_SOURCE_TREE_MODULES: list[str] = []
+_WORKERS_IMPORTED: list[str] = []
+
+
+@pytest.hookimpl(optionalhook=True)
+def pytest_testnodedown(node, error):
+    output = getattr(node, "workeroutput", None) or {}
+    _WORKER_SOURCE_TREE_MODULES.extend(output.get("probwrap_source_tree_modules", []))
+    if "probwrap_imported" in output:
+        _WORKERS_IMPORTED.append(output["probwrap_imported"])
+
+
 def pytest_sessionfinish(session, exitstatus):
+    if _in_xdist_worker(session.config):
+        # skips reach the controller as test reports; only the import check is per process
+        import probwrap
+
+        session.config.workeroutput["probwrap_source_tree_modules"] = _modules_from_source_tree()
+        session.config.workeroutput["probwrap_imported"] = str(Path(probwrap.__file__).parent)
+        return
     problems = []
     if _ci():
         bad = _unexpected_skips(_SKIPS)
@@ -110,12 +149,13 @@ def pytest_sessionfinish(session, exitstatus):
     if os.environ.get("PROBWRAP_EXPECT_INSTALLED", "") not in ("", "0"):
         import probwrap
 
-        local = _modules_from_source_tree()
+        local = _modules_from_source_tree() + _WORKER_SOURCE_TREE_MODULES
         if local:
             problems.append("probwrap was imported from the source tree, not the installed wheel:")
             problems += [f"  {m}" for m in local[:10]]
         else:
-            print(f"\nprobwrap under test: {Path(probwrap.__file__).parent}")
+            places = sorted({str(Path(probwrap.__file__).parent), *_WORKERS_IMPORTED})
+            print(f"\nprobwrap under test: {', '.join(places)}")
     if problems:
         print("\n" + "\n".join(problems), file=sys.stderr)
         if session.exitstatus == 0:
