@@ -938,8 +938,8 @@ def multiclass_coverage(quick: bool) -> None:
     reps = 60 if quick else 500
     sizes = (500, 2000) if quick else (500, 2000, 10_000)
     src_prior, tgt_prior = np.array([0.5, 0.3, 0.2]), np.array([0.3, 0.5, 0.2])
-    print(f"5. Multiclass interval (method='em', interval='score': analytic, logit scale of each "
-          f"share), source prior "
+    print(f"5. Multiclass interval (method='em', interval='score': analytic; per share the "
+          f"Wilson shape, the default, and the logit shape), source prior "
           f"{src_prior.tolist()}, target {tgt_prior.tolist()}, {reps} repetitions per cell; "
           "coverage of each class share, worst class shown")
     head = (f"{'data':>14} {'n_lab':>6} {'n_unl':>6} {'shape':>6} | {'cov90':>6} {'cov95':>6} "
