@@ -122,10 +122,10 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         classes, k one-vs-rest) stay below 1,000: it costs one to two orders of magnitude more
         to cross-validate than the others, and beyond small sets its merged probability agrees
         with the smoothed isotonic fit to within about 1/n. On ties in the number of
-        parameters, Venn–Abers is preferred to isotonic regression. With fewer than 8 held-out
+        parameters, Venn–Abers is preferred to isotonic regression. With fewer than 20 held-out
         rows in some class the order-based maps (binning, isotonic, Venn–Abers) are not
-        eligible, and for a multiclass model no one-vs-rest map is (Platt and beta included);
-        ``method_notes_`` says so.
+        eligible, and with fewer than 8, for a multiclass model, no one-vs-rest map is (Platt
+        and beta included); ``method_notes_`` says so.
     clip : float or None, default=None
         Only for the parametric maps (Platt, beta, temperature) fitted on ``predict_proba``
         output: log-odds are clipped to ``±logit(1 - clip)`` (log-probabilities floored at

@@ -48,7 +48,7 @@ class FewClassRowsWarning(UserWarning):
     cannot change it; five is the common-practice minimum count per cell of Cochran 1954, the
     same threshold as :class:`~probwrap.PriorShiftWrapper`'s warning about few labelled rows).
     The map's part for that class then rests on those rows and its regularisation. ``method=
-    "auto"`` instead leaves the order-based maps out below 8 rows and, below 2, uses the most
+    "auto"`` instead leaves the order-based maps out below 20 rows and, below 2, uses the most
     regularised map, with a warning of its own.
     """
 

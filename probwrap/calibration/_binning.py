@@ -13,6 +13,13 @@ from ._isotonic import _pool_ties
 
 __all__ = ["BinningMap"]
 
+#: A group of tied scores whose cumulative-weight midpoint, in units of one bin's share, lies
+#: within this of a bin boundary goes to the upper bin, as it would in exact arithmetic. The
+#: rounding of weights rescaled from another scale is about 1e-16 per row and of the cumulative
+#: sum at most about 1e-16 times the number of rows, far below it; a midpoint that lies truly
+#: this close below a boundary needs about 10^9 rows per bin.
+_EDGE_TOLERANCE = 1e-9
+
 
 class BinningMap(CalibrationMap):
     """Histogram binning: the calibrated probability is the smoothed positive rate of a bin.
@@ -21,7 +28,9 @@ class BinningMap(CalibrationMap):
     (Zadrozny & Elkan 2001). Bins are defined on the weighted cumulative distribution of the
     scores, so a row of weight 2 acts exactly like the same row twice. Tied scores are never
     split across bins: each distinct score goes, with all its weight, to the bin that holds the
-    midpoint of its share of the cumulative weight. A distinct score heavier than one bin's share
+    midpoint of its share of the cumulative weight (a midpoint within 1e-9 of a bin's share below
+    a boundary counts as on it and goes to the upper bin, as in exact arithmetic, so that weights
+    rescaled from another scale cannot move it). A distinct score heavier than one bin's share
     can therefore leave a neighbouring bin empty; empty bins are dropped, so fewer than
     ``n_bins`` bins may be used (``n_bins_used_``).
 
@@ -124,8 +133,13 @@ class BinningMap(CalibrationMap):
         total = weight.sum()
         before = np.cumsum(weight) - weight
         midpoint_share = (before + 0.5 * weight) / total
+        # a midpoint within _EDGE_TOLERANCE of a bin boundary counts as on it: weights given
+        # on another scale (normalised to sum 1, or times 1e-3) differ in their last bits, and
+        # a group whose midpoint lies exactly on a boundary (common with integer-ratio
+        # weights) must not move to another bin with them
         bin_of_group = np.minimum(
-            np.floor(self.n_bins * midpoint_share).astype(np.int64), self.n_bins - 1
+            np.floor(self.n_bins * midpoint_share + _EDGE_TOLERANCE).astype(np.int64),
+            self.n_bins - 1,
         )
         # renumber the non-empty bins 0, 1, ... (bin numbers rise with the score)
         new_bin = np.ones(distinct.shape[0], dtype=bool)
