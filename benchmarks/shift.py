@@ -1,6 +1,6 @@
 """Prior shift: does adapting help, does it do no harm, are the intervals honest, is it fast?
 
-Four parts, each printing its targets beside the measured values.
+Six parts, each printing its targets beside the measured values.
 
 1. **Evidence** (weak and strong models, 2-50 % prevalence, shifts x0.5, x1, x2). One-feature
    Gaussian classes (unit variance, means 0 and ``delta``): a weak model (``delta = 0.74``, AUC
@@ -51,7 +51,7 @@ Four parts, each printing its targets beside the measured values.
 Run: ``nice python benchmarks/shift.py`` (about 45 minutes on two shared cores; the full
 coverage grid is most of it) or
 ``--quick`` (about a minute; fewer repetitions, so coverage is only indicative);
-``--only=evidence`` (or ``coverage``, ``speed``, ``small``, ``multiclass``) runs one part;
+``--only=evidence`` (or ``coverage``, ``speed``, ``small``, ``multiclass``, ``tiny``) runs one part;
 ``--seed=N`` draws the evidence part's data from another seed (default 0), to check a rule on
 draws it was not chosen on. ``--ceiling`` (about twice the evidence part's time) runs the
 evidence part on the draws of seed N and N + 1 and then prints the design-aware bound (12 bins,
@@ -65,8 +65,18 @@ seeds' draws (mean share closed; worst no-shift ratio).
    error stacked in, a normal interval on the logit scale of each share — for n_labelled, n_unlabelled in {500, 2000, 10000}, on three Gaussian
    classes (a shrunk logistic regression, frozen) and scikit-learn's bundled wine data
    (resampled by class from held-back rows); the ratio of the interval's implied standard error
-   to the spread of the estimate; beside the BCa bootstrap it replaced as the multiclass
-   default; and the pickled size of a wrapper fitted on 50,000 rows.
+   to the spread of the estimate and the estimate's bias over its spread; each cell for both
+   shapes of the per-share interval on the same estimates and covariances (``logit``: the
+   normal interval on the logit scale; ``wilson``: the score interval on the effective row
+   count the variance implies); then a share near 0 (target (0.6, 0.38, 0.02)), where the two
+   shapes differ most; beside the BCa bootstrap it replaced as the multiclass default; and the
+   pickled size of a wrapper fitted on 50,000 rows.
+6. **Tiny labelled sets, no shift** (``--only=tiny``): scikit-learn's bundled binary tasks
+   (breast cancer, wine class 1, iris virginica from the sepals, digits 8), three models, 20,
+   40 and 100 labelled rows drawn at random and the other rows unlabelled: the adapted log loss
+   over the wrapper's own before ``adapt`` (calibration alone), with the evidence gate's harm
+   relative to the labelled rows' log loss (default) and to the posteriors' entropy alone (the
+   earlier rule) on the same draws. Target: <= 1.02 in every cell.
 """
 
 from __future__ import annotations
@@ -585,6 +595,95 @@ def test_calibration(quick: bool) -> None:
           f"{worst_ratio:.3f} -> {'met' if worst_ratio <= 1.02 else 'MISSED'}\n")
 
 
+def _tiny_sets():
+    """Bundled binary tasks (the minority class as class 1) for :func:`tiny_labelled`."""
+    from sklearn.datasets import load_digits, load_iris, load_wine
+
+    X, y = load_breast_cancer(return_X_y=True)
+    yield "breast_cancer", X, (y == 0).astype(int)
+    X, y = load_wine(return_X_y=True)
+    yield "wine 1 vs rest", X, (y == 1).astype(int)
+    X, y = load_iris(return_X_y=True)
+    yield "iris virginica", X[:, :2], (y == 2).astype(int)  # sepal only: a weaker model
+    X, y = load_digits(return_X_y=True)
+    yield "digits 8 vs rest", X, (y == 8).astype(int)
+
+
+def tiny_labelled(quick: bool) -> None:
+    """``adapt`` when nothing moved, with 20-100 labelled rows, against calibration alone.
+
+    Bundled binary tasks (scikit-learn's breast cancer, wine class 1, iris virginica on the
+    sepal measurements, digits 8), three models (scaled logistic regression, Gaussian naive
+    Bayes, gradient boosting) fitted on a quarter of the rows and frozen; per repetition
+    ``n_lab`` labelled rows drawn at random from the rest (both classes present) fit the
+    wrapper, the other rows are the unlabelled rows (no shift) and are scored with their labels.
+    Printed per cell: the mean over repetitions of the adapted log loss over the wrapper's own
+    before ``adapt`` (calibration alone), with its standard error and the worst draw; how often
+    ``adapt`` moved; and the same for the gate without the labelled rows' log loss as the
+    harm's reference (the rule before this part was added), on the same draws. Target: <= 1.02
+    in every cell.
+    """
+    from sklearn.ensemble import HistGradientBoostingClassifier
+    from sklearn.naive_bayes import GaussianNB
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    reps = 40 if quick else 200
+    models = {
+        "logistic": lambda: make_pipeline(StandardScaler(), LogisticRegression(max_iter=500)),
+        "naive_bayes": GaussianNB,
+        "boosting": lambda: HistGradientBoostingClassifier(max_iter=50, random_state=0),
+    }
+    print(f"6. Tiny labelled sets, no shift: adapted over calibration alone (the wrapper before "
+          f"adapt), {reps} repetitions per cell; 'entropy only': the gate's harm relative to the "
+          "posteriors' entropy alone (the earlier rule), same draws")
+    head = (f"{'data':>16} {'model':>11} {'n_lab':>5} | {'ratio':>6} {'se':>6} {'worst':>6} "
+            f"{'moved':>6} | {'entropy only':>12} {'worst':>6} {'moved':>6}")
+    print(head)
+    print("-" * len(head))
+    rng = np.random.default_rng(12)
+    worst = {"new": 0.0, "old": 0.0}
+    for name, X, y in _tiny_sets():
+        for model_name, make in models.items():
+            order = rng.permutation(y.shape[0])
+            n_fit = y.shape[0] // 4
+            model = FrozenEstimator(make().fit(X[order[:n_fit]], y[order[:n_fit]]))
+            pool = order[n_fit:]
+            for n_lab in (20, 40, 100):
+                ratios = {"new": [], "old": []}
+                moved = {"new": 0, "old": 0}
+                for _ in range(reps):
+                    perm = rng.permutation(pool)
+                    lab, new = perm[:n_lab], perm[n_lab:]
+                    if np.unique(y[lab]).size < 2:
+                        continue
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("ignore")
+                        wrapper = PriorShiftWrapper(model, n_resamples=0).fit(X[lab], y[lab])
+                    rows, y_new = np.arange(new.shape[0]), y[new]
+                    none = -np.log(wrapper.predict_proba(X[new])[rows, y_new]).mean()
+                    ref = wrapper.prior_estimator_._source_log_loss
+                    for rule in ("old", "new"):
+                        wrapper.prior_estimator_._source_log_loss = ref if rule == "new" else None
+                        with warnings.catch_warnings():
+                            warnings.simplefilter("ignore")
+                            wrapper.adapt(X[new])
+                        adapted = -np.log(wrapper.predict_proba(X[new])[rows, y_new]).mean()
+                        ratios[rule].append(adapted / none)
+                        moved[rule] += wrapper.adaptation_weight_ > 0
+                r_new, r_old = np.asarray(ratios["new"]), np.asarray(ratios["old"])
+                done = r_new.shape[0]
+                worst["new"] = max(worst["new"], r_new.mean())
+                worst["old"] = max(worst["old"], r_old.mean())
+                print(f"{name:>16} {model_name:>11} {n_lab:5d} | {r_new.mean():6.3f} "
+                      f"{r_new.std(ddof=1) / np.sqrt(done):6.3f} {r_new.max():6.2f} "
+                      f"{moved['new'] / done:6.1%} | {r_old.mean():12.3f} {r_old.max():6.2f} "
+                      f"{moved['old'] / done:6.1%}")
+    print(f"target: adapted / calibration alone <= 1.02 in every cell; worst cell "
+          f"{worst['new']:.3f} -> {'met' if worst['new'] <= 1.02 else 'MISSED'} (entropy only: "
+          f"{worst['old']:.3f})\n")
+
+
 # -- 2. coverage -------------------------------------------------------------------------------
 class GaussianSource:
     """Gaussian classes 1.5 apart; posteriors of a model trained at equal priors."""
@@ -780,6 +879,57 @@ class WineSource:
         return out, y
 
 
+def _share_coverage(source, n_lab, n_unl, src_prior, tgt_prior, reps):
+    """Coverage of each class share's interval at 90 % and 95 % for both shapes of
+    :func:`probwrap.shift._analytic.share_interval` on the same draws: per shape ``(coverage 90,
+    coverage 95, widths at 95 (reps, k), implied-se over spread ratio)``, plus ``"bias/sd"``
+    and the mean upper end at 95 % per shape. The default shape is checked against the
+    estimator's own interval on every draw."""
+    from probwrap.shift._analytic import (
+        SHARE_INTERVAL_SHAPE,
+        analytic_prior_interval,
+        share_interval,
+    )
+    from probwrap.shift._resample import _widen
+
+    shapes = ("logit", "wilson")
+    hits = {(s, lv): np.zeros(3) for s in shapes for lv in (0.90, 0.95)}
+    width = {s: [] for s in shapes}
+    upper = {s: [] for s in shapes}
+    mls = []
+    for _ in range(reps):
+        p_s, y_s = source.draw(n_lab, src_prior)
+        p_t, _ = source.draw(n_unl, tgt_prior)
+        est = PriorEstimator(random_state=0).fit(p_s, y_s)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            res = est.estimate(p_t)
+        ml = res.ml_prior
+        mls.append(ml)
+        cov = analytic_prior_interval(est.calibrator_, p_t, np.ones(n_unl), float(n_unl),
+                                      est.source_prior_, ml, est._eta_cov(), 0.95)[1]
+        for shape in shapes:
+            for level in (0.90, 0.95):
+                b = _widen(share_interval(ml, cov, level, shape), ml, ml, float(n_unl), level)
+                if level == 0.95 and shape == SHARE_INTERVAL_SHAPE:
+                    assert np.allclose(b, res.ml_interval, rtol=0, atol=1e-9)
+                lo, hi = b.T
+                hits[shape, level] += (lo <= tgt_prior) & (tgt_prior <= hi)
+                if level == 0.95:
+                    width[shape].append(hi - lo)
+                    upper[shape].append(hi[2])
+    mls = np.asarray(mls)
+    sd = np.std(mls, 0, ddof=1)
+    out = {"bias/sd": f"{np.max(np.abs(mls.mean(0) - tgt_prior) / sd):.2f}"}
+    for shape in shapes:
+        w = np.asarray(width[shape])
+        # the interval's implied standard error (width / 3.92) over the spread of the estimate
+        out[shape] = (hits[shape, 0.90] / reps, hits[shape, 0.95] / reps, w,
+                      float(np.mean(np.mean(w, 0) / (2 * 1.96) / sd)))
+        out["upper " + shape] = float(np.mean(upper[shape]))
+    return out
+
+
 def multiclass_coverage(quick: bool) -> None:
     """Coverage of the analytic multiclass interval (delta method on the EM fixed point with
     the labelled rows' error stacked in), beside the BCa bootstrap it replaced as default."""
@@ -788,52 +938,58 @@ def multiclass_coverage(quick: bool) -> None:
     reps = 60 if quick else 500
     sizes = (500, 2000) if quick else (500, 2000, 10_000)
     src_prior, tgt_prior = np.array([0.5, 0.3, 0.2]), np.array([0.3, 0.5, 0.2])
-    print(f"5. Multiclass interval (method='em', interval='score': analytic, logit scale of each "
-          f"share), source prior "
+    print(f"5. Multiclass interval (method='em', interval='score': analytic; per share the "
+          f"Wilson shape, the default, and the logit shape), source prior "
           f"{src_prior.tolist()}, target {tgt_prior.tolist()}, {reps} repetitions per cell; "
           "coverage of each class share, worst class shown")
-    head = (f"{'data':>14} {'n_lab':>6} {'n_unl':>6} | {'cov90':>6} {'cov95':>6} "
-            f"{'width95':>8} {'sd ratio':>8} | {'target':>24}")
+    head = (f"{'data':>14} {'n_lab':>6} {'n_unl':>6} {'shape':>6} | {'cov90':>6} {'cov95':>6} "
+            f"{'width95':>8} {'sd ratio':>8} {'bias/sd':>7} | {'target':>24}")
     print(head)
     print("-" * len(head))
     rng = np.random.default_rng(5)
-    misses, n_cells = 0, 0
+    shapes = ("logit", "wilson")
+    misses = dict.fromkeys(shapes, 0)
+    n_cells = 0
     for source in (ThreeGaussianSource(rng), WineSource(rng)):
         for n_lab in sizes:
             for n_unl in sizes:
-                hits = {0.90: np.zeros(3), 0.95: np.zeros(3)}
-                width, mls, ses = [], [], []
-                for _ in range(reps):
-                    p_s, y_s = source.draw(n_lab, src_prior)
-                    p_t, _ = source.draw(n_unl, tgt_prior)
-                    est = PriorEstimator(random_state=0).fit(p_s, y_s)
-                    for level in (0.90, 0.95):
-                        est.confidence_level = level
-                        with warnings.catch_warnings():
-                            warnings.simplefilter("ignore")
-                            res = est.estimate(p_t)
-                        lo, hi = res.ml_interval.T
-                        hits[level] += (lo <= tgt_prior) & (tgt_prior <= hi)
-                        if level == 0.95:
-                            width.append(hi - lo)
-                            mls.append(res.ml_prior)
-                            ses.append((hi - lo) / (2 * 1.96))
-                c90, c95 = hits[0.90] / reps, hits[0.95] / reps
-                ok = bool(np.all(np.abs(c90 - 0.90) <= 0.02 + 1e-9)
-                          and np.all(np.abs(c95 - 0.95) <= 0.02 + 1e-9))
-                misses += not ok
+                cells = _share_coverage(source, n_lab, n_unl, src_prior, tgt_prior, reps)
                 n_cells += 1
-                worst90 = c90[np.argmax(np.abs(c90 - 0.90))]
-                worst95 = c95[np.argmax(np.abs(c95 - 0.95))]
-                # the interval's implied standard error (width / 3.92; the interval is not
-                # symmetric on the share scale) over the spread of the estimate
-                ratio = float(np.mean(np.mean(ses, 0) / np.std(mls, 0, ddof=1)))
-                print(f"{source.name:>14} {n_lab:6d} {n_unl:6d} | {worst90:6.1%} {worst95:6.1%} "
-                      f"{np.mean(width):8.4f} {ratio:8.2f} | "
-                      f"{'90+-2, 95+-2: ' + ('met' if ok else 'MISSED'):>24}")
-    print(f"cells outside 2 points of nominal (any of the three shares): {misses} of {n_cells} "
-          "(three shares per cell: an exact interval misses more often by chance than in the "
-          "two-class table)\n")
+                for shape in shapes:
+                    c90, c95, width, ratio = cells[shape]
+                    ok = bool(np.all(np.abs(c90 - 0.90) <= 0.02 + 1e-9)
+                              and np.all(np.abs(c95 - 0.95) <= 0.02 + 1e-9))
+                    misses[shape] += not ok
+                    worst90 = c90[np.argmax(np.abs(c90 - 0.90))]
+                    worst95 = c95[np.argmax(np.abs(c95 - 0.95))]
+                    where = f"{source.name:>14} {n_lab:6d} {n_unl:6d}" if shape == "logit" else (
+                        f"{'':>14} {'':>6} {'':>6}")
+                    bias = cells["bias/sd"] if shape == "logit" else ""
+                    print(f"{where} {shape:>6} | {worst90:6.1%} {worst95:6.1%} "
+                          f"{np.mean(width):8.4f} {ratio:8.2f} {bias:>7} | "
+                          f"{'90+-2, 95+-2: ' + ('met' if ok else 'MISSED'):>24}")
+    for shape in shapes:
+        print(f"{shape}: cells outside 2 points of nominal (any of the three shares): "
+              f"{misses[shape]} of {n_cells}")
+    print("(three shares per cell: an exact interval misses more often by chance than in the "
+          "two-class table; bias/sd: the largest |mean estimate - true share| over the estimate's "
+          "spread, of the three shares)\n")
+
+    # a share near 0: where the two shapes differ most (width, and the upper end)
+    near_zero = np.array([0.6, 0.38, 0.02])
+    print(f"   a share near 0: target {near_zero.tolist()}, same source prior; the class at 2 % "
+          f"(coverage at 90 % / 95 %, mean width and mean upper end of its 95 % interval)")
+    print(f"{'data':>14} {'n_lab':>6} {'n_unl':>6} {'shape':>6} | {'cov90':>6} {'cov95':>6} "
+          f"{'width95':>8} {'upper95':>8}")
+    rng0 = np.random.default_rng(8)
+    for source in (ThreeGaussianSource(rng0), WineSource(rng0)):
+        for n in ((500, 2000) if not quick else (500,)):
+            cells = _share_coverage(source, n, n, src_prior, near_zero, reps)
+            for shape in shapes:
+                c90, c95, width, _ = cells[shape]
+                print(f"{source.name:>14} {n:6d} {n:6d} {shape:>6} | {c90[2]:6.1%} {c95[2]:6.1%} "
+                      f"{np.mean(width, 0)[2]:8.4f} {cells['upper ' + shape]:8.4f}")
+    print()
 
     reps_b = 20 if quick else 100
     print(f"   BCa bootstrap (n_resamples=200, the earlier multiclass default) on the same kind of "
@@ -876,7 +1032,7 @@ def multiclass_coverage(quick: bool) -> None:
 
 def main(quick: bool = False,
          seed: int = 0,
-         parts: tuple[str, ...] = ("evidence", "coverage", "speed", "small", "multiclass"),
+         parts: tuple[str, ...] = ("evidence", "coverage", "speed", "small", "multiclass", "tiny"),
          ) -> None:
     import os
 
@@ -894,6 +1050,8 @@ def main(quick: bool = False,
         test_calibration(quick)
     if "multiclass" in parts:
         multiclass_coverage(quick)
+    if "tiny" in parts:
+        tiny_labelled(quick)
     print(f"\n(total {time.perf_counter() - t0:.0f} s)")
 
 
@@ -903,4 +1061,4 @@ if __name__ == "__main__":
         chosen = ("ceiling", *chosen)
     seeds = [int(a[len("--seed="):]) for a in sys.argv if a.startswith("--seed=")]
     main(quick="--quick" in sys.argv, seed=seeds[0] if seeds else 0,
-         parts=chosen or ("evidence", "coverage", "speed", "small", "multiclass"))
+         parts=chosen or ("evidence", "coverage", "speed", "small", "multiclass", "tiny"))

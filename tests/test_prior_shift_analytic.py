@@ -174,20 +174,50 @@ def test_share_interval_is_the_logit_interval_of_statsmodels_glm():
     # interval of the intercept of an intercept-only logistic regression of "class c" on the
     # rows (statsmodels GLM, Binomial family), mapped back by the logistic function. Both are
     # closed forms of the same numbers: agreement to 1e-9 (GLM's IRLS stops at 1e-8 deviance).
+    # The default (Wilson) shape is then exactly Wilson's interval of the class's row count
+    # out of 300 (statsmodels' proportion_confint): the implied row count is 300 itself.
     sm = pytest.importorskip("statsmodels.api")
     from scipy.special import expit
+    from statsmodels.stats.proportion import proportion_confint
 
-    from probwrap.shift._analytic import analytic_prior_interval
+    from probwrap.shift._analytic import analytic_prior_interval, share_interval
 
     rng = np.random.default_rng(7)
     y = rng.choice(3, size=300, p=[0.6, 0.3, 0.1])
     proba = np.eye(3)[y]
     share = np.bincount(y, minlength=3) / y.shape[0]
-    iv, _ = analytic_prior_interval(None, proba, np.ones(300), 300.0, np.array([0.5, 0.3, 0.2]),
-                                    share, None, 0.9)
+    default, cov = analytic_prior_interval(None, proba, np.ones(300), 300.0,
+                                           np.array([0.5, 0.3, 0.2]), share, None, 0.9)
+    iv = share_interval(share, cov, 0.9, "logit")
     for c in range(3):
         fit = sm.GLM((y == c).astype(float), np.ones((300, 1)),
                      family=sm.families.Binomial()).fit()
         np.testing.assert_allclose(iv[c], expit(fit.conf_int(alpha=0.1)[0]), atol=1e-9)
+        count = int(np.sum(y == c))
+        np.testing.assert_allclose(default[c], proportion_confint(count, 300, alpha=0.1,
+                                                                  method="wilson"), atol=1e-9)
     # asymmetric, as a share's sampling distribution: the small class reaches further up
     assert iv[2, 1] - share[2] > share[2] - iv[2, 0]
+
+
+def test_wilson_share_interval_is_statsmodels_wilson_on_the_implied_row_count():
+    # Reference: statsmodels' proportion_confint(method="wilson") (Wilson 1927) with the
+    # effective row count pi (1 - pi) / se^2 that the delta-method variance implies; closed
+    # forms of the same numbers, so 1e-12. Near 0 with a large standard error it is narrower
+    # than the logit interval and reaches less far up.
+    from statsmodels.stats.proportion import proportion_confint
+
+    from probwrap.shift._analytic import share_interval
+
+    pi = np.array([0.02, 0.3, 0.68])
+    se = np.array([0.03, 0.05, 0.05])
+    cov = np.diag(se**2)
+    wil = share_interval(pi, cov, 0.9, "wilson")
+    for c in range(3):
+        n = pi[c] * (1 - pi[c]) / se[c] ** 2
+        np.testing.assert_allclose(wil[c], proportion_confint(pi[c] * n, n, alpha=0.1,
+                                                              method="wilson"), atol=1e-12)
+    lgt = share_interval(pi, cov, 0.9, "logit")
+    assert wil[0, 1] < lgt[0, 1] and wil[0, 1] - wil[0, 0] < lgt[0, 1] - lgt[0, 0]
+    with pytest.raises(ValueError, match="`shape` must be"):
+        share_interval(pi, cov, 0.9, "profile")

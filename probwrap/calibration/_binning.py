@@ -28,7 +28,9 @@ class BinningMap(CalibrationMap):
     (Zadrozny & Elkan 2001). Bins are defined on the weighted cumulative distribution of the
     scores, so a row of weight 2 acts exactly like the same row twice. Tied scores are never
     split across bins: each distinct score goes, with all its weight, to the bin that holds the
-    midpoint of its share of the cumulative weight. A distinct score heavier than one bin's share
+    midpoint of its share of the cumulative weight (a midpoint within 1e-9 of a bin's share below
+    a boundary counts as on it and goes to the upper bin, as in exact arithmetic, so that weights
+    rescaled from another scale cannot move it). A distinct score heavier than one bin's share
     can therefore leave a neighbouring bin empty; empty bins are dropped, so fewer than
     ``n_bins`` bins may be used (``n_bins_used_``).
 

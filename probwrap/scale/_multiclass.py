@@ -110,7 +110,9 @@ def _confusions(block, calibrator, k):
     onehot = np.eye(k)[y]
     hard = (np.eye(k)[np.argmax(p, axis=1)] * w[:, None]).T @ onehot
     soft = (p * w[:, None]).T @ onehot
-    return hard, soft
+    # the labelled rows' log loss (weighted sum), the evidence gate's reference as in memory
+    own = np.maximum(p[np.arange(p.shape[0]), y], np.finfo(float).tiny)
+    return hard, soft, np.array([-(w @ np.log(own))])
 
 
 def _score_sums(block, calibrator, src):
@@ -222,7 +224,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             cal.converged_ = bool(converged)
             cal.floor_ = _floor(n_rows, k)
             cal.clip_ = clip
-        hard, soft = parts.reduce(_confusions, cal, k)
+        hard, soft, loss_sum = parts.reduce(_confusions, cal, k)
         su, suu, sw, sww = parts.reduce(_class_score_sums, cal, class_weight / total)
         eta_sums = None
         if _wants_interval(owner):
@@ -237,6 +239,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     est.source_prior_ = class_weight / total
     est.confusion_ = hard / total
     est.soft_confusion_ = soft / total
+    est._source_log_loss = float(np.asarray(loss_sum).ravel()[0]) / total
     est._src = None
     est.n_source_effective_ = total**2 / squared_weight
     if eta_sums is not None:
@@ -430,7 +433,11 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
                                 pooled=True)
     stat, pvalue = test.statistic, test.pvalue
     # the same harm scale as in memory (for the max_harm cutoff): from the same sums
-    harm_scale = _null_harm_scale_moments(soft_mean / total, suu / total, entropy / total, src,
+    loss = entropy / total
+    reference = getattr(est, "_source_log_loss", None)  # the labelled rows' log loss
+    if reference is not None and np.isfinite(reference) and reference > 0:
+        loss = min(loss, float(reference))
+    harm_scale = _null_harm_scale_moments(soft_mean / total, suu / total, loss, src,
                                           test.mean_cov)
     return PriorEstimate(
         prior=prior,

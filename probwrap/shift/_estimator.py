@@ -37,6 +37,7 @@ from ._shift_tests import (
     _score_rows,
     _score_stat_moments,
     _source_moments,
+    labelled_log_loss,
     null_harm_scale,
 )
 
@@ -102,7 +103,7 @@ class PriorEstimator(_Resampling):
     interval : {"score", "bca", "percentile"}, default="score"
         ``"score"``: for two classes, the inverted two-sample score test
         (:func:`score_interval`; no resampling, both samples' error included, honest at the
-        edges); for more classes with ``method="em"`` the delta-method interval (logit scale) on
+        edges); for more classes with ``method="em"`` the delta-method interval (Wilson shape) on
         the EM fixed point, whose variance stacks the unlabelled rows' score with the labelled
         rows' estimating equations of the calibration and the source prior (the M-estimator
         sandwich; no resampling); other multiclass methods fall back to ``"bca"``. ``"bca"``:
@@ -234,10 +235,15 @@ class PriorEstimator(_Resampling):
         # mean of the labelled rows' scores and its variance, for the two-sample shift test:
         # the plain (not class-stratified) mean, whose variance carries the error of the
         # labelled class shares that source_prior_ and the calibration were fitted to
+        p_cal = self.calibrate(p)
         self._source_score = _source_moments(
-            _score_rows(self.calibrate(p), self.source_prior_), w, None,
+            _score_rows(p_cal, self.source_prior_), w, None,
             self.source_prior_, effective_rows,
         )
+        # the labelled rows' own log loss of the calibrated posteriors: the evidence gate's
+        # harm is relative to the log loss, and the posteriors' entropy alone overstates it
+        # where a calibration fitted on few rows leaves them underconfident
+        self._source_log_loss = labelled_log_loss(p_cal, y_idx, w)
         # the labelled rows' share of the analytic interval (more than two classes): the
         # sandwich covariance of the calibration and the source prior, a small matrix
         self._labelled_cov = (
@@ -443,7 +449,8 @@ class PriorEstimator(_Resampling):
         test = _score_stat_moments((m_t, c_t, n_eff), _current_source_score(source_score), k,
                                     pooled=True)
         stat, pvalue = test.statistic, test.pvalue
-        harm_scale = null_harm_scale(p, w, src, test.mean_cov)
+        harm_scale = null_harm_scale(p, w, src, test.mean_cov,
+                                     reference_loss=getattr(self, "_source_log_loss", None))
         bounds, dropped, ml_bounds = None, 0, None
         if self.n_resamples > 0 and interval:
             source = self._source_rows()

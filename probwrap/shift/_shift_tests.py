@@ -147,8 +147,18 @@ def null_harm(cutoff: float, df: int) -> float:
     return float(max(upper - 2.0 * a * tail + a * a * inverse, 0.0))
 
 
+def labelled_log_loss(proba: np.ndarray, y_index: np.ndarray, sample_weight: np.ndarray) -> float:
+    """Weighted mean log loss of posteriors ``proba`` on labelled rows ``y_index`` (in nats;
+    a posterior of 0 for the true class counts as the smallest positive float)."""
+    p = np.asarray(proba, dtype=float)
+    w = np.asarray(sample_weight, dtype=float)
+    own = p[np.arange(p.shape[0]), np.asarray(y_index, dtype=np.intp)]
+    return float(-(w @ np.log(np.maximum(own, np.finfo(float).tiny))) / w.sum())
+
+
 def null_harm_scale(
-    proba: np.ndarray, sample_weight: np.ndarray, source_prior: np.ndarray, mean_cov: np.ndarray
+    proba: np.ndarray, sample_weight: np.ndarray, source_prior: np.ndarray, mean_cov: np.ndarray,
+    reference_loss: float | None = None,
 ) -> float:
     r"""Relative harm, when nothing moved, of applying a change of the priors of size ``T``.
 
@@ -167,6 +177,15 @@ def null_harm_scale(
     of the posteriors themselves (their mean entropy), the expected relative harm of a rule
     that applies the share :math:`w(T)` is at most ``scale * E[w(T)^2 T]``, where this
     function returns ``scale`` :math:`= \lambda / (2 L_0)`.
+
+    ``reference_loss``: the labelled rows' own log loss of the calibrated posteriors. The
+    mean entropy is the loss the posteriors expect of themselves, right only where they are
+    calibrated; a calibration fitted on a few dozen rows often leaves them underconfident
+    (their entropy up to twice the loss they reach on new labelled rows, measured by
+    ``benchmarks/shift.py --only=tiny``), which made the relative harm look smaller than it
+    is. With ``reference_loss`` :math:`L_0` is the smaller of the two estimates — the larger
+    harm scale, so the bound holds under either (the labelled loss is in-sample, so
+    optimistic: the choice errs toward moving less).
     """
     p = np.asarray(proba, dtype=float)
     w = np.asarray(sample_weight, dtype=float)
@@ -175,8 +194,10 @@ def null_harm_scale(
     u = _score_rows(p, src)
     with np.errstate(divide="ignore", invalid="ignore"):
         ent = -np.where(p > 0, p * np.log(p), 0.0).sum(axis=1)
-    return _null_harm_scale_moments(wn @ p, (u * wn[:, None]).T @ u, float(wn @ ent), src,
-                                    mean_cov)
+    loss = float(wn @ ent)
+    if reference_loss is not None and np.isfinite(reference_loss) and reference_loss > 0:
+        loss = min(loss, float(reference_loss))
+    return _null_harm_scale_moments(wn @ p, (u * wn[:, None]).T @ u, loss, src, mean_cov)
 
 
 def _null_harm_scale_moments(
