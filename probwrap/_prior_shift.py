@@ -10,9 +10,15 @@ from typing import Any
 import numpy as np
 
 from ._cost_policy import SMALL_HELDOUT_ROWS, SUMMARY_BINS
-from ._heldout import HeldOutClassifierBase, _is_dask, _multiclass_dask, check_fitted
+from ._heldout import (
+    HeldOutClassifierBase,
+    _is_dask,
+    _multiclass_dask,
+    check_fitted,
+    rescale_extreme_weights,
+)
 from ._prior_shift_tallied import _tally_rows, tallied_adapt, tallied_monitor
-from ._validation import plain
+from ._validation import check_sample_weight, plain
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
 from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
 from .shift._shift_tests import evidence_cutoff
@@ -486,6 +492,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             )
         else:
             proba = self._inner_output(X, "predict_proba")
+            if sample_weight is not None:
+                # as at fit: weights beyond about 1e+-77 are taken as relative ones (exact power
+                # of two), since the estimators' sums of squares overflow or underflow there
+                sample_weight = rescale_extreme_weights(
+                    check_sample_weight(sample_weight, proba.shape[0]), "PriorShiftWrapper.adapt"
+                )
         poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
             self.interval == "score" and not multiclass
         )

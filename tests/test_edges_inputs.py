@@ -149,3 +149,17 @@ def test_frozen_model_class_without_heldout_rows_warns(method):
     with pytest.warns(UserWarning, match=r"class\(es\) 2 of the frozen model have no held-out "
                                          r"rows in `y`"):
         CalibrationWrapper(FrozenEstimator(model), method=method).fit(X[keep], y[keep])
+
+
+@pytest.mark.parametrize("exponent", [1000, -1000])
+def test_adapt_rescales_weights_far_from_one_exactly(cancer, exponent):
+    """PriorShiftWrapper.adapt with all weights 2**k: divided by 2**k they are exactly 1, so
+    the estimate and the returned probabilities equal the unweighted adapt, bit for bit. Before,
+    weights of 1e300 stopped adapt with NumPy's bare 'SVD did not converge'."""
+    X, y, model = cancer
+    plain_fit = PriorShiftWrapper(FrozenEstimator(model)).fit(X, y).adapt(X)
+    with pytest.warns(WeightScaleWarning, match=r"PriorShiftWrapper\.adapt: .*divided by 2\*\*"):
+        weighted = PriorShiftWrapper(FrozenEstimator(model)).fit(X, y).adapt(
+            X, sample_weight=np.full(y.size, 2.0**exponent))
+    np.testing.assert_array_equal(weighted.target_prior_, plain_fit.target_prior_)
+    np.testing.assert_array_equal(weighted.predict_proba(X), plain_fit.predict_proba(X))
