@@ -110,7 +110,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     target_prior : array-like of shape (n_classes,), dict or None, default=None
         Known class priors of the deployment population: an array in ``classes_`` order, a
         dict keyed by class label, or (binary only) a float, the prevalence of ``classes_[1]``.
-        When given it takes precedence over the priors estimated by ``adapt``.
+        When given it takes precedence over the priors estimated by ``adapt``. A class given
+        a share of 0 gets probability exactly 0 on every row, with a warning at ``fit``.
     method : {"em", "bbse", "bbse_soft", "acc", "pacc"}, default="em"
         How ``adapt`` estimates the priors: the likelihood of Saerens et al. (2002), shrunk
         toward the source prior by ``prior_strength``, black-box shift estimation with the hard
@@ -332,7 +333,21 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 f"`target_prior` is a single number, which is only meaningful for two classes; "
                 f"give one entry per class in classes_ order ({classes.tolist()})."
             )
-        return check_prior(prior, k, name="target_prior")
+        prior = check_prior(prior, k, name="target_prior")
+        zero = [c for c, share in zip(classes.tolist(), prior, strict=True) if share == 0.0]
+        if zero:
+            # exact 0/1 probabilities are what was asked for, but never silently: a class given
+            # no share can never be predicted again, however strong the evidence for it
+            warnings.warn(
+                f"`target_prior` gives class(es) {zero} a share of 0: predict_proba returns "
+                f"exactly 0 for them on every row"
+                + (" (and exactly 1 for the other class)" if k == 2 else "")
+                + ", so no evidence can ever bring them back. If they can still occur, give "
+                "them a small positive share.",
+                UserWarning,
+                stacklevel=4,
+            )
+        return prior
 
     # -- fitting ---------------------------------------------------------------------------------
     def fit(self, X: Any, y: Any, sample_weight: Any = None, **fit_params: Any) -> PriorShiftWrapper:

@@ -163,3 +163,16 @@ def test_adapt_rescales_weights_far_from_one_exactly(cancer, exponent):
             X, sample_weight=np.full(y.size, 2.0**exponent))
     np.testing.assert_array_equal(weighted.target_prior_, plain_fit.target_prior_)
     np.testing.assert_array_equal(weighted.predict_proba(X), plain_fit.predict_proba(X))
+
+
+def test_target_prior_with_a_zero_share_warns_and_gives_exact_zero(cancer):
+    """A target prior of 0 for a class is honoured (Bayes' rule with that prior, Saerens,
+    Latinne & Decaestecker 2002, eq. 2.4, gives exactly 0), but never silently."""
+    X, y, model = cancer
+    with pytest.warns(UserWarning, match=r"gives class\(es\) \[0\] a share of 0.*exactly 1"):
+        m = PriorShiftWrapper(FrozenEstimator(model), target_prior=[0.0, 1.0]).fit(X, y)
+    proba = m.predict_proba(X)
+    assert np.all(proba[:, 0] == 0.0) and np.all(proba[:, 1] == 1.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", UserWarning)  # a positive share: no such warning
+        PriorShiftWrapper(FrozenEstimator(model), target_prior=[0.01, 0.99]).fit(X, y)
