@@ -124,7 +124,10 @@ def labelled_parameter_cov(
     summing to one), so ``theta^ - theta ~ -H^-1 sum w~ g_i`` with ``H`` the Hessian of the
     fitted objective; the source shares are ``sum w~ e_i`` with ``e_i`` the class indicators
     minus the shares. The covariance of the stacked per-row influence ``(-H^-1 g_i, e_i)`` over
-    ``n_eff`` rows (Kish's effective size, as the shift test counts the labelled rows).
+    ``n_eff`` rows (Kish's effective size, as the shift test counts the labelled rows). Its
+    calibration block is the robust (Huber-White) sandwich ``H^-1 (sum g_i g_i^T) H^-1``, not
+    the inverse Hessian, so a misspecified map does not understate it: without the scale prior
+    it equals statsmodels' ``cov_type="HC0"`` covariance of the same likelihood (tested).
     """
     from ..calibration._base import count_weights
 
