@@ -66,7 +66,7 @@ def wilson_interval(
     p = np.clip(k / m, 0.0, 1.0)
     denom = 1.0 + z * z / m
     centre = (p + z * z / (2.0 * m)) / denom
-    half = z * np.sqrt(p * (1.0 - p) / m + z * z / (4.0 * m * m)) / denom
+    half = z * np.sqrt(p * (1.0 - p) / m + (z / (2.0 * m)) ** 2) / denom
     # The closed form is exactly 0 at k = 0 and exactly 1 at k = n, but in floating point
     # ``centre - half`` is then a few ulp off (e.g. 5.55e-17), which puts the bound on the
     # wrong side of the observed frequency and makes error bars negative. Use the exact ends
@@ -86,9 +86,6 @@ def _frequencies(sample_weight: Any, n: int, what: str) -> tuple[np.ndarray, boo
         raise ValueError(f"`sample_weight` must have shape ({n},); got {w.shape}.")
     if not np.all(np.isfinite(w)) or np.any(w < 0):
         raise ValueError("`sample_weight` must be finite and non-negative.")
-    if float(w.max(initial=0.0)) >= 2.0**62:
-        raise ValueError("`sample_weight` must be below 2**62: each weight counts the rows a "
-                         "row stands for, and the band simulates that many outcomes.")
     w, rescaled = count_weights(w)
     if rescaled:
         warnings.warn(
@@ -98,6 +95,23 @@ def _frequencies(sample_weight: Any, n: int, what: str) -> tuple[np.ndarray, boo
             WeightScaleWarning, stacklevel=4,
         )
     return w, rescaled
+
+
+#: Largest weight that is still an exact whole number of rows in a double (2**53).
+_EXACT_COUNT = 2.0**53
+#: Expected count on the rarer side below which a huge row's draw uses the Poisson limit.
+_LIMIT_COUNT = 1e4
+
+
+def _sum_scale(w: np.ndarray) -> float:
+    """A power of two that keeps the sum of ``w`` (and so every bin's sum) finite."""
+    with np.errstate(over="ignore"):
+        total = float(w.sum())
+    if np.isfinite(total):
+        return 1.0
+    # sum below n * max(w): bring max(w) under 2**1000 / n
+    exp = int(np.frexp(float(w.max()))[1]) - (1000 - int(np.ceil(np.log2(w.size + 1))))
+    return float(np.ldexp(1.0, -max(exp, 0)))
 
 
 def bin_counts(bin_weight: Any, sample_weight: Any) -> np.ndarray:
@@ -144,7 +158,9 @@ def consistency_band(
     sample_weight : array-like of shape (n,), optional
         Row frequencies: a row of weight 2 counts as two identical rows, each with its own
         simulated outcome (weight ``m + f``, ``m`` whole and ``0 <= f < 1``: a binomial draw of
-        ``m`` outcomes plus one outcome weighing ``f``). Weights that sum to less than the
+        ``m`` outcomes plus one outcome weighing ``f``; beyond ``2**53`` rows, where a double no
+        longer holds whole counts, the count is drawn from the binomial's Poisson or normal
+        limit). Weights that sum to less than the
         number of rows they weight cannot be frequencies: they are rescaled to sum to Kish's
         effective sample size (equal weights become 1 each), with a
         :class:`~probwrap.calibration.WeightScaleWarning`.
@@ -184,17 +200,38 @@ def consistency_band(
     w = (np.ones_like(p) if sample_weight is None
          else _frequencies(sample_weight, p.shape[0], "the consistency band")[0])
     rng = check_random_state(random_state)
-    weight = np.bincount(idx, weights=w, minlength=n_bins)
-    # a row of weight m + f: m outcomes of its own (one binomial draw) and one weighing f
-    whole = np.floor(w)
-    part = w - whole
+    # Totals are taken on a power-of-two scale that keeps every bin's sum finite (exact: only
+    # the exponent changes); frequencies are ratios, so the scale cancels.
+    scale = _sum_scale(w)
+    weight = np.bincount(idx, weights=w * scale, minlength=n_bins)
+    # A row of weight m + f: m outcomes of its own (one binomial draw) and one weighing f.
+    # Beyond 2**53 a weight is no longer a whole number of rows in floating point, and NumPy's
+    # binomial draw stops at 2**63 rows: such rows draw their count of positives from the
+    # binomial's Poisson limit where fewer than _LIMIT_COUNT outcomes are expected on the rarer
+    # side, and from its normal limit (de Moivre-Laplace) otherwise; the normal draw is
+    # clipped to [0, m]. Their bin's band is then narrower than 1e-7 in any case.
+    huge = w >= _EXACT_COUNT
+    small_w = np.where(huge, 0.0, w)
+    whole = np.floor(small_w)
+    part = small_w - whole
     has_part = bool(np.any(part > 0))
     whole = whole.astype(np.int64)
+    hw, hp = w[huge], p[huge]
+    rare = np.minimum(hp, 1.0 - hp) * hw < _LIMIT_COUNT
+    low_side = hp <= 0.5
     freq = np.empty((int(n_draws), n_bins))
     for d in range(int(n_draws)):
         hits = rng.binomial(whole, p).astype(float)
         if has_part:
             hits += part * (rng.uniform(size=p.shape[0]) < p)
+        hits *= scale
+        if hw.size:
+            z = rng.standard_normal(hw.size)
+            normal = np.clip(hw * hp + np.sqrt(hw * hp * (1.0 - hp)) * z, 0.0, hw)
+            lam = np.where(low_side, hw * hp, hw * (1.0 - hp))
+            k = rng.poisson(np.where(rare, lam, 0.0)).astype(float)
+            poisson = np.where(low_side, k, hw - k)
+            hits[huge] = np.where(rare, poisson, normal) * scale
         with np.errstate(invalid="ignore", divide="ignore"):
             freq[d] = np.bincount(idx, weights=hits, minlength=n_bins) / weight
     alpha = 1.0 - level

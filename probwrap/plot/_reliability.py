@@ -6,6 +6,7 @@ from typing import Any
 
 import numpy as np
 
+from .._heldout import rescale_extreme_weights
 from .._validation import plain
 from ..metrics import expected_calibration_error, reliability_table
 from ._common import binary_labels, class_proba, estimator_classes
@@ -168,6 +169,8 @@ class ReliabilityDiagram:
             raise ValueError(f"`band` must be one of {_BANDS}; got {plain(band)!r}.")
         y_arr = np.asarray(y_true)
         p = np.asarray(y_prob, dtype=float)
+        if sample_weight is not None:
+            sample_weight = _diagram_weights(sample_weight, y_arr.shape[0])
         if p.ndim == 2:
             if pos_label is not None:
                 raise ValueError(
@@ -329,6 +332,19 @@ class ReliabilityDiagram:
         self.hist_ax_ = hist_ax
         self.figure_ = ax.figure
         return self
+
+
+def _diagram_weights(sample_weight: Any, n: int) -> np.ndarray:
+    """Weights as given, or divided by a power of two (exact, with a warning) when the largest
+    lies outside about [1e-77, 1e77], as the wrappers do: beyond that the bins' sums and the
+    intervals' squares overflow or underflow. The bins' frequencies do not change; the weights
+    the table reports are then the rescaled ones."""
+    w = np.asarray(sample_weight, dtype=float)
+    if w.shape != (n,):
+        raise ValueError(f"`sample_weight` must have shape ({n},); got {w.shape}.")
+    if not np.all(np.isfinite(w)) or np.any(w < 0):
+        raise ValueError("`sample_weight` must be finite and non-negative.")
+    return rescale_extreme_weights(w, "ReliabilityDiagram")
 
 
 def _bands(table, values, band, sample_weight, confidence_level, n_draws, random_state):
