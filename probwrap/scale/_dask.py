@@ -326,7 +326,7 @@ def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, respo
         raise ValueError(ZERO_WEIGHT)
     if tally.rows_by_label is not None:
         # the in-memory checks (two classes, two with weight), from the tallied row counts
-        from ._multiclass_wrappers import check_class_rows
+        from ._blocks import check_class_rows
 
         check_class_rows(owner, classes, tally.rows_by_label, tally.weighted_rows_by_label)
     elif np.count_nonzero(tally.label_weight > 0) < 2:

@@ -32,9 +32,15 @@ from typing import Any
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 
-from ._blocks import block_label_index, block_weights, predict_block
+from ._blocks import (
+    block_label_index,
+    block_weights,
+    check_class_rows,
+    class_rows,
+    predict_block,
+)
 from ._dask import _frozen_multiclass
-from ._multiclass_wrappers import _Smallest, check_class_rows, class_rows
+from ._multiclass_wrappers import _Smallest
 from ._rows import in_weight_unit, rows_of
 from ._tally import ZERO_WEIGHT, warn_weight_unit
 

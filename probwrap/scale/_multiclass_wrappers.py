@@ -14,7 +14,13 @@ from typing import Any
 
 import numpy as np
 
-from ._blocks import block_label_index, block_weights, predict_block
+from ._blocks import (
+    block_label_index,
+    block_weights,
+    check_class_rows,
+    class_rows,
+    predict_block,
+)
 from ._tally import ZERO_WEIGHT
 
 __all__ = ["fit_multiclass_calibration", "first_block_row_costs", "heldout_cost_dask"]
@@ -76,41 +82,6 @@ def _square_terms(block, k):
     square = np.mean((s - s.mean(axis=1, keepdims=True)) ** 2, axis=1)
     return np.concatenate([[w @ square, w.sum(), w @ w, np.count_nonzero(w)],
                            *class_rows(y, w, k)])
-
-
-def class_rows(y: np.ndarray, w: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
-    """Rows of each class, and rows of each class with positive weight (as floats, to add)."""
-    return (np.bincount(y, minlength=k).astype(float),
-            np.bincount(y[w > 0], minlength=k).astype(float))
-
-
-def check_class_rows(owner: Any, classes: np.ndarray, rows: np.ndarray, weighted: np.ndarray,
-                     *, absent_warning: bool = True) -> None:
-    """The in-memory checks of a frozen model's held-out labels (``_fit_heldout``), from the rows
-    of each class counted block by block: at least two classes (and two with positive weight),
-    and a warning naming the model's classes with no held-out rows."""
-    from .._validation import plain
-
-    if np.count_nonzero(rows) < 2:
-        raise ValueError(
-            "`y` contains only 1 class; the held-out rows must contain at least two classes."
-        )
-    if np.count_nonzero(weighted) < 2:
-        raise ValueError(
-            "Only one class has a positive `sample_weight`; at least two classes must carry "
-            "weight."
-        )
-    absent = np.flatnonzero(rows == 0)
-    if absent_warning and absent.size:
-        names = ", ".join(repr(plain(classes[j])) for j in absent[:5])
-        warnings.warn(
-            f"{type(owner).__name__}: class(es) {names} of the frozen model have no held-out "
-            "rows in `y`; nothing fitted here is checked on them (their probabilities follow "
-            "the model and the map fitted on the other classes). Hold out labelled rows of "
-            "every class.",
-            UserWarning,
-            stacklevel=5,
-        )
 
 
 def _ovr_tallies_block(owner, resolution, Xb, yb, wb):
