@@ -150,7 +150,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``adapt`` accepts: the cutoff ``c`` is the smallest value >= ``min_evidence`` at which
         the expected harm of the rule under no shift — computed from the unlabelled rows
         themselves (how much the predictions change per unit of prior, against how well the
-        rows pin the prior down, see :func:`probwrap.shift._shift_tests.null_harm_scale`) — is at
+        rows pin the prior down, see :func:`probwrap.shift._shift_tests.null_harm_scale`; grown
+        where EM's estimate lies beyond the one-step estimate, as with posteriors near 0 and 1
+        from a calibration on a few labelled rows,
+        :func:`probwrap.shift._shift_tests.estimate_amplification`) — is at
         most ``max_harm`` (a limited-risk empirical-Bayes rule in the spirit of Efron & Morris
         1972). Strongly separating models or common classes keep ``c`` near 1; a weak model
         at a small prevalence, whose rows say little about the prior while every prediction

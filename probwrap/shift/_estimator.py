@@ -37,6 +37,7 @@ from ._shift_tests import (
     _score_rows,
     _score_stat_moments,
     _source_moments,
+    estimate_amplification,
     labelled_log_loss,
     null_harm_scale,
 )
@@ -451,6 +452,13 @@ class PriorEstimator(_Resampling):
         stat, pvalue = test.statistic, test.pvalue
         harm_scale = null_harm_scale(p, w, src, test.mean_cov,
                                      reference_loss=getattr(self, "_source_log_loss", None))
+        if ml is not None and harm_scale:
+            # the move that will be applied is a share of EM's estimate, which can lie far
+            # beyond the one-step estimate the harm bound assumes (estimate_amplification)
+            u = _score_rows(p, src)
+            harm_scale *= estimate_amplification(
+                (ml - src)[1:], (u * (w / w.sum())[:, None]).T @ u, test.mean_cov, test.raw
+            )
         bounds, dropped, ml_bounds = None, 0, None
         if self.n_resamples > 0 and interval:
             source = self._source_rows()
