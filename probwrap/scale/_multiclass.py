@@ -315,15 +315,21 @@ def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.
     from ..shift._resample import _widen
 
     src = est.source_prior_
-    if float(est.prior_strength) > 0:
-        start = prior if np.all(prior > 0) else src.copy()
-        ml = _em_dask(parts, src, start, total, float(est.tol), int(est.max_iter))[0]
-    else:
-        ml = prior
+    ml = _ml_prior(est, parts, prior, total)
     sums = rows.map_reduce(_target_interval_sums, estimator, est.calibrator_, src, ml, unit)
     bounds = interval_from_sums(sums, n_eff, ml, est._labelled_cov, est.confidence_level)[0]
     level = est.confidence_level
     return ml, _widen(bounds, prior, ml, n_eff, level), _widen(bounds, ml, ml, n_eff, level)
+
+
+def _ml_prior(est, parts, prior, total):
+    """The maximum-likelihood prior (EM without the shrinkage's pseudo-rows, started at the
+    shrunk estimate ``prior``), as in memory for every EM estimate."""
+    src = est.source_prior_
+    if float(est.prior_strength) > 0:
+        start = prior if np.all(prior > 0) else src.copy()
+        return _em_dask(parts, src, start, total, float(est.tol), int(est.max_iter))[0]
+    return prior
 
 
 # -- target side ------------------------------------------------------------------------------
@@ -439,10 +445,18 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         if method == "em" and getattr(est, "_labelled_cov", None) is not None:
             ml, interval, ml_interval = _analytic_interval(est, estimator, rows, parts, prior,
                                                            total, n_eff, unit)
+        elif method == "em":
+            # as in memory, every EM estimate has its maximum-likelihood prior (the evidence
+            # gate's amplification below reads it)
+            ml = _ml_prior(est, parts, prior, total)
     finally:
         parts.release()
     from ..shift._estimator import _current_source_score
-    from ..shift._shift_tests import _null_harm_scale_moments, _score_stat_moments
+    from ..shift._shift_tests import (
+        _null_harm_scale_moments,
+        _score_stat_moments,
+        estimate_amplification,
+    )
 
     mean = su / total
     cov = suu / total - np.outer(mean, mean)
@@ -457,6 +471,11 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         loss = min(loss, float(reference))
     harm_scale = _null_harm_scale_moments(soft_mean / total, suu / total, loss, src,
                                           test.mean_cov)
+    if ml is not None and harm_scale:
+        # as in memory: the applied move is a share of EM's estimate, which can lie far beyond
+        # the one-step estimate the harm bound assumes (J = the weighted mean of u u')
+        harm_scale *= estimate_amplification((ml - src)[1:], suu / total, test.mean_cov,
+                                             test.raw)
     return PriorEstimate(
         prior=prior,
         method=method,
