@@ -145,6 +145,28 @@ def test_prior_shift_fit_and_adapt_with_extreme_weights(client, binary, scale):
     assert abs(model.target_prior_[1] - local.target_prior_[1]) < 2e-3
 
 
+def test_bootstrap_replicates_with_extreme_weights(client, binary):
+    # the Poisson replicate tallies carry the same power of two as the counts: the percentile
+    # interval of the prior and the cutoff's bootstrap interval are those of the relative weights
+    X, y = _data(N, seed=27)
+    w = _weights(28)
+    Xd, yd = _dask(X, y)
+    got = []
+    for scale in (2.0**-1000, 1.0):
+        wd = da.from_array(w * scale, chunks=1000)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", WeightScaleWarning)
+            shift = PriorShiftWrapper(binary, interval="percentile", n_resamples=30,
+                                      random_state=0).fit(Xd, yd, sample_weight=wd)
+            shift.adapt(Xd, sample_weight=wd)
+            policy = CostPolicyWrapper(binary, costs={"fp": 1.0, "fn": 4.0}, strategy="tuned",
+                                       n_resamples=30, random_state=0).fit(Xd, yd,
+                                                                           sample_weight=wd)
+        ci = policy.cutoff_interval_
+        got.append((shift.target_prior_interval_.tolist(), policy.cutoff_, ci.low, ci.high))
+    assert got[0] == got[1]
+
+
 @pytest.mark.parametrize("scale", [2.0**1000, 1e-300])
 @pytest.mark.parametrize("kind", ["calibration", "cost"])
 def test_binary_wrappers_with_extreme_weights(client, binary, scale, kind):

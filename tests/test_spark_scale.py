@@ -330,3 +330,22 @@ def test_empty_and_single_row_partitions_on_spark(spark, model):
                                atol=1e-3)
     with pytest.raises(ValueError, match="has no rows"):
         CalibrationWrapper(model, method="platt").fit(frame.where("weight > 100"), "damaged")
+
+
+def test_monitor_on_spark_with_extreme_and_zero_weights(spark, model):
+    # each batch is estimated with its weights divided by their power of two (one warning), and
+    # a batch whose weights are all zero is the in-memory ValueError, not a PythonException
+    df = _data(600, seed=24)
+    shift = PriorShiftWrapper(model, n_resamples=0).fit(df[COLS], df["damaged"])
+    rows = df[COLS].assign(week=np.arange(600) // 200,
+                           w=np.random.default_rng(25).uniform(1.0, 2.0, size=600))
+    plain = shift.monitor(spark.createDataFrame(rows), "week", sample_weight="w")
+    with warnings.catch_warnings(record=True) as rec:
+        warnings.simplefilter("always")
+        huge = shift.monitor(spark.createDataFrame(rows.assign(w=rows["w"] * 1e300)), "week",
+                             sample_weight="w")
+    assert len(_extreme_warnings(rec)) == 1
+    np.testing.assert_allclose(huge["prior"], plain["prior"], rtol=0, atol=1e-12)
+    zero = rows.assign(w=np.where(rows["week"] == 1, 0.0, rows["w"]))
+    with pytest.raises(ValueError, match="Batch 1: `sample_weight` is zero for every row"):
+        shift.monitor(spark.createDataFrame(zero), "week", sample_weight="w")
