@@ -523,7 +523,7 @@ def _tally_block(
             raise ValueError(f"`sample_weight` has shape {w.shape} but the data have {n} rows.")
         check_block_weights(w)
     # weights far from 1 are tallied divided by a power of two (see ScoreTally.weight_unit)
-    unit = weight_unit_of(w.max())
+    unit = 1.0 if sample_weight is None else weight_unit_of(w.max())
     if unit != 1.0:
         w = w / unit
     scaled = s / resolution
@@ -556,10 +556,17 @@ def _tally_block(
         for b in range(n_replicates):  # one replicate at a time: memory O(n + m), not O(B n)
             wb = w * rng.poisson(1.0, size=n)
             reps[b] = np.bincount(cell, weights=wb, minlength=m * cols).reshape(m, cols)[occupied]
+    # rows of each label (unit weights: the weighted counts themselves), and those of them with
+    # a positive weight (all of them unless some weight is 0)
+    if sample_weight is None:
+        rows = np.rint(counts.sum(axis=0)).astype(np.int64)
+        weighted = rows
+    else:
+        rows = np.bincount(labels_of, minlength=cols)
+        weighted = rows if w.min() > 0 else np.bincount(labels_of[w > 0], minlength=cols)
     return ScoreTally(
         bins, counts[occupied], sums[occupied], resolution, n, y is not None, reps,
-        float(np.dot(w, w)), unit, np.bincount(labels_of, minlength=cols),
-        np.bincount(labels_of[w > 0], minlength=cols),
+        float(np.dot(w, w)), unit, rows, weighted,
     )
 
 
