@@ -254,7 +254,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         if self.method == "auto":
             self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
         else:
-            self._warn_few_class_rows(ho.y_index, w)
+            self._warn_few_class_rows(*ho.counted_rows(w))
             # a method the user named that cannot be fitted raises, naming the method
             try:
                 self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)

@@ -383,8 +383,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             self._source_tally = None
             return self._finish_fit(est)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
-        if not ho.from_tally:
-            self._warn_few_class_rows(ho.y_index, ho.sample_weight)
+        self._warn_few_class_rows(*ho.counted_rows(ho.sample_weight))
         est = PriorEstimator(
             self.method,
             calibration=self.calibration,

@@ -9,6 +9,8 @@ subset leaves them out). The session is started once for the whole run.
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -19,6 +21,7 @@ from sklearn.metrics import confusion_matrix, log_loss
 
 from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
 from probwrap.aggregated import tally_counts
+from probwrap.calibration import FewClassRowsWarning
 from probwrap.scale import add_predictions, tally_model, tally_scores
 
 # PySpark's own notes about newer pandas releases (not probwrap's concern)
@@ -243,3 +246,106 @@ def test_spark_input_errors_name_the_argument(spark, model):
         PriorShiftWrapper(three).fit(frame, "damaged")  # a multiclass model, class 2 never seen
     with pytest.raises(ValueError, match="one column besides"):
         tally_scores(frame, "damaged")
+
+
+# -- awkward input (docs/scale.md "Awkward input on Dask and Spark"; Dask: test_edges_distributed)
+def _extreme_warnings(record):
+    return [r for r in record if "reaches" in str(r.message)]
+
+
+def test_extreme_weights_on_spark_give_the_fit_of_the_divided_weights(spark, model):
+    # 1e300 stopped PriorShiftWrapper with an OverflowError, 2**-1000 gave "1e-298 effective
+    # rows": each chunk is now tallied divided by its power of two and the partitions aligned,
+    # bit for bit the fit on the divided weights, one WeightScaleWarning per call
+    df = _data(1200, seed=20)
+    u = np.random.default_rng(21).uniform(1.0, 1.9, size=len(df))
+    u[0] = 1.9  # the largest weight in [1, 2): 2**-1000 * u divided by 2**-1000 is u exactly
+    frames = [_frame(spark, df.assign(w=u * scale)) for scale in (2.0**-1000, 1.0)]
+    fitted = []
+    for frame in frames:
+        with warnings.catch_warnings(record=True) as rec:
+            warnings.simplefilter("always")
+            shift = PriorShiftWrapper(model, n_resamples=20, random_state=0).fit(
+                frame, "damaged", sample_weight="w").adapt(frame, sample_weight="w")
+        fitted.append((shift, len(_extreme_warnings(rec))))
+    (extreme, n_extreme), (plain, n_plain) = fitted
+    assert (n_extreme, n_plain) == (2, 0)  # one from fit, one from adapt
+    np.testing.assert_array_equal(extreme.target_prior_, plain.target_prior_)
+    np.testing.assert_array_equal(extreme.target_prior_interval_, plain.target_prior_interval_)
+    # multiclass one-vs-rest maps (per-class tallies) at 1e300: the in-memory fit, which
+    # divides the weights alike, up to the bins (as test_spark_multiclass.py: 1e-3)
+    three = FrozenEstimator(LogisticRegression().fit(df[COLS], np.arange(len(df)) % 3))
+    labels = df.assign(cls=np.arange(len(df)) % 3, w=u * 1e300).drop(columns="damaged")
+    with warnings.catch_warnings(record=True) as rec:
+        warnings.simplefilter("always")
+        remote = CalibrationWrapper(three, method="platt").fit(
+            _frame(spark, labels), "cls", sample_weight="w")
+        local = CalibrationWrapper(three, method="platt").fit(
+            labels[COLS], labels["cls"], sample_weight=labels["w"])
+    assert len(_extreme_warnings(rec)) == 2  # one each
+    np.testing.assert_allclose(remote.predict_proba(df[COLS]), local.predict_proba(df[COLS]),
+                               atol=1e-3)
+
+
+def test_bad_labels_and_weights_on_spark_raise_the_in_memory_error(spark, model):
+    # a ValueError raised on an executor came back as PySpark's PythonException around a Java
+    # stack trace; it is now raised on the driver as the in-memory ValueError
+    df = _data(400, seed=22)
+    text = df.assign(damaged=np.where(df["damaged"] == 1, "yes", "no").astype(object))
+    text.loc[7, "damaged"] = None
+    text_model = FrozenEstimator(LogisticRegression().fit(df[COLS], text["damaged"].fillna("no")))
+    missing = r"1 missing label\(s\) \(None or NaN; first at row 7"
+    with pytest.raises(ValueError, match=missing):
+        CalibrationWrapper(text_model, method="platt").fit(text[COLS], text["damaged"])
+    with pytest.raises(ValueError, match=missing):  # one partition: the row of the frame
+        CalibrationWrapper(text_model, method="platt").fit(
+            spark.createDataFrame(text).coalesce(1), "damaged")
+    nan_weight = df.assign(w=np.where(np.arange(400) == 3, np.nan, 1.0))
+    with pytest.raises(ValueError, match="`sample_weight` contains NaN or infinite values"):
+        PriorShiftWrapper(model, n_resamples=0).fit(_frame(spark, nan_weight), "damaged",
+                                                    sample_weight="w")
+    with pytest.raises(ValueError, match="zero for every row; at least one weight must be"):
+        CostPolicyWrapper(model, costs=COSTS, strategy="tuned").fit(
+            _frame(spark, df.assign(w=0.0)), "damaged", sample_weight="w")
+    # a multiclass cost rule on one class was fitted without a word
+    three = FrozenEstimator(LogisticRegression().fit(df[COLS], np.arange(400) % 3))
+    with pytest.raises(ValueError, match="`y` contains only 1 class"):
+        CostPolicyWrapper(three).fit(_frame(spark, df.assign(damaged=0)), "damaged")
+
+
+def test_empty_and_single_row_partitions_on_spark(spark, model):
+    df = _data(300, seed=23)
+    local = PriorShiftWrapper(model, n_resamples=0).fit(df[COLS], df["damaged"])
+    # 6 partitions by label: at least 4 of them empty
+    frame = spark.createDataFrame(df).repartition(6, "damaged")
+    remote = PriorShiftWrapper(model, n_resamples=0).fit(frame, "damaged")
+    np.testing.assert_allclose(remote.source_prior_, local.source_prior_, rtol=1e-12)
+    few = pd.concat([df[df['damaged'] == 0].iloc[:3], df[df['damaged'] == 1].iloc[:3]])
+    single = spark.createDataFrame(few).repartition(6)
+    with pytest.warns(FewClassRowsWarning):
+        got = CalibrationWrapper(model, method="platt").fit(single, "damaged")
+    with pytest.warns(FewClassRowsWarning):
+        want = CalibrationWrapper(model, method="platt").fit(few[COLS], few["damaged"])
+    np.testing.assert_allclose(got.predict_proba(df[COLS]), want.predict_proba(df[COLS]),
+                               atol=1e-3)
+    with pytest.raises(ValueError, match="has no rows"):
+        CalibrationWrapper(model, method="platt").fit(frame.where("weight > 100"), "damaged")
+
+
+def test_monitor_on_spark_with_extreme_and_zero_weights(spark, model):
+    # each batch is estimated with its weights divided by their power of two (one warning), and
+    # a batch whose weights are all zero is the in-memory ValueError, not a PythonException
+    df = _data(600, seed=24)
+    shift = PriorShiftWrapper(model, n_resamples=0).fit(df[COLS], df["damaged"])
+    rows = df[COLS].assign(week=np.arange(600) // 200,
+                           w=np.random.default_rng(25).uniform(1.0, 2.0, size=600))
+    plain = shift.monitor(spark.createDataFrame(rows), "week", sample_weight="w")
+    with warnings.catch_warnings(record=True) as rec:
+        warnings.simplefilter("always")
+        huge = shift.monitor(spark.createDataFrame(rows.assign(w=rows["w"] * 1e300)), "week",
+                             sample_weight="w")
+    assert len(_extreme_warnings(rec)) == 1
+    np.testing.assert_allclose(huge["prior"], plain["prior"], rtol=0, atol=1e-12)
+    zero = rows.assign(w=np.where(rows["week"] == 1, 0.0, rows["w"]))
+    with pytest.raises(ValueError, match="Batch 1: `sample_weight` is zero for every row"):
+        shift.monitor(spark.createDataFrame(zero), "week", sample_weight="w")

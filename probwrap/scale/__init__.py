@@ -78,7 +78,8 @@ def tally_model(estimator, X, y=None, *, sample_weight=None, response="predict_p
         Labels (from ``estimator.classes_``), partitioned like ``X``; None for unlabelled rows.
         With a Spark DataFrame, the name of its label column.
     sample_weight : dask array / Series or array-like, or str, default=None
-        Row weights (a column name with a Spark DataFrame).
+        Row weights (a column name with a Spark DataFrame); beyond about 1e+-77 they are
+        tallied divided by a power of two (``weight_unit``), with a ``WeightScaleWarning``.
     response : {"predict_proba", "decision_function"}, default="predict_proba"
         Probabilities become log-odds ``log p1 - log p0``; decision values are used as they are.
     resolution : float, default=1e-3
@@ -90,7 +91,7 @@ def tally_model(estimator, X, y=None, *, sample_weight=None, response="predict_p
     """
     from ._dask import dask_tally_of_model, is_dask_collection
     from ._spark import is_spark_frame
-    from ._tally import _check_resolution
+    from ._tally import _check_resolution, warn_weight_unit
 
     spark = is_spark_frame(X)
     if not (spark or is_dask_collection(X)):
@@ -106,9 +107,13 @@ def tally_model(estimator, X, y=None, *, sample_weight=None, response="predict_p
     if spark:
         from ._spark import spark_tally_of_model
 
-        return spark_tally_of_model(
+        tally = spark_tally_of_model(
             estimator, response, X, y, sample_weight, resolution=_check_resolution(resolution)
         )
-    return dask_tally_of_model(
-        estimator, response, X, y, sample_weight, resolution=_check_resolution(resolution)
-    )
+    else:
+        tally = dask_tally_of_model(
+            estimator, response, X, y, sample_weight, resolution=_check_resolution(resolution)
+        )
+    # weights beyond about 1e+-77 are tallied divided by a power of two (weight_unit)
+    warn_weight_unit(tally.weight_unit, "tally_model", tally.total_weight, stacklevel=3)
+    return tally

@@ -22,6 +22,7 @@ from ._tally import (
     _tally_block,
     merge_tallies,
     replicate_seed,
+    warn_weight_unit,
 )
 
 __all__ = ["tally_scores"]
@@ -55,7 +56,9 @@ def tally_scores(
         the name of its label column. Without ``y`` the tally is unlabelled (one column of
         weights), as for unlabelled deployment data.
     sample_weight : array-like or dask array of shape (n,), or str, default=None
-        Non-negative row weights (frequencies); with a Spark DataFrame, a column name.
+        Non-negative row weights (frequencies); with a Spark DataFrame, a column name. Weights
+        whose largest lies outside about [1e-77, 1e77] are tallied divided by a power of two
+        (exact; ``weight_unit`` of the result), with a ``WeightScaleWarning``.
     n_labels : int, default=None
         Number of label columns (default 2 with ``y``; multiclass labels need it).
     resolution : float, default=1e-3
@@ -100,6 +103,15 @@ def tally_scores(
         raise ValueError(f"`chunk_size` must be a positive integer; got {plain(chunk_size)!r}.")
     n_rep = _check_n_replicates(n_replicates)
     seed = replicate_seed(random_state) if n_rep else 0
+    tally = _distributed_tally(scores, y, sample_weight, n_labels, r, n_rep, seed)
+    if tally is None:
+        tally = _in_memory_tally(scores, y, sample_weight, n_labels, r, n_rep, seed, chunk_size)
+    # weights beyond about 1e+-77 are tallied divided by a power of two (weight_unit)
+    warn_weight_unit(tally.weight_unit, "tally_scores", tally.total_weight, stacklevel=3)
+    return tally
+
+
+def _distributed_tally(scores, y, sample_weight, n_labels, r, n_rep, seed) -> ScoreTally | None:
     if type(scores).__module__.startswith("pyspark.sql"):
         from ._spark import is_spark_frame, spark_tally_scores
 
@@ -109,6 +121,10 @@ def tally_scores(
         from ._dask import tally_dask_scores
 
         return tally_dask_scores(scores, y, sample_weight, n_labels, r, n_rep, seed)
+    return None
+
+
+def _in_memory_tally(scores, y, sample_weight, n_labels, r, n_rep, seed, chunk_size) -> ScoreTally:
     s = check_scores(scores, name="scores")
     n = s.shape[0]
     if n == 0:

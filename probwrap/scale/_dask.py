@@ -7,6 +7,7 @@ only those tallies are merged, as a tree, and brought back to the client.
 
 from __future__ import annotations
 
+import warnings
 from typing import Any
 
 import numpy as np
@@ -14,6 +15,7 @@ import numpy as np
 from .._validation import plain
 from ._tally import (
     DEFAULT_RESOLUTION,
+    ZERO_WEIGHT,
     ScoreTally,
     _check_resolution,
     _combine,
@@ -188,9 +190,22 @@ def _persist(dask: Any, parts: list) -> list:
 
 
 def _reduce(dask: Any, fn, parts: list, *args) -> Any:
-    """Sum of ``fn(part, *args)`` over the blocks (small results only)."""
-    call = dask.delayed(fn, pure=True)
-    results = dask.compute(*[call(part, *args) for part in parts])
+    """Sum of ``fn(part, *args)`` over the blocks (small results only); empty blocks (kept as
+    None) are left out."""
+    call = dask.delayed(_unless_empty, pure=True)
+    results = [r for r in dask.compute(*[call(part, fn, *args) for part in parts])
+               if r is not None]
+    return combine_all(results)
+
+
+def _unless_empty(part: Any, fn: Any, *args: Any) -> Any:
+    return None if part is None else fn(part, *args)
+
+
+def combine_all(results: list) -> Any:
+    """Sum (see ``_combine``) of the results of the kept blocks, in order; no blocks: no rows."""
+    if not results:
+        raise ValueError("`X` has no rows; at least one row is needed.")
     out = results[0]
     for r in results[1:]:
         out = _combine(out, r)
@@ -224,7 +239,7 @@ def tally_dask_scores(
     if tally.n_rows == 0:
         raise ValueError("`scores` is empty; a tally needs at least one row.")
     if tally.total_weight <= 0:
-        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+        raise ValueError(ZERO_WEIGHT)
     return tally
 
 
@@ -246,19 +261,13 @@ def _binary_scores(values: np.ndarray, response: str) -> np.ndarray:
 def _block_tally(
     estimator, response, classes, resolution, Xb, yb, wb, n_replicates=0, seed=None
 ) -> ScoreTally:
-    s = _binary_scores(getattr(estimator, response)(Xb), response)
-    y_index = None
-    if yb is not None:
-        yb = np.asarray(yb).ravel()
-        pos = np.searchsorted(classes, yb)
-        pos = np.clip(pos, 0, classes.shape[0] - 1)
-        bad = classes[pos] != yb
-        if np.any(bad):
-            raise ValueError(
-                f"`y` has labels {np.unique(yb[bad])[:5].tolist()} that the frozen estimator "
-                f"does not know; its classes are {classes.tolist()}."
-            )
-        y_index = pos
+    from ._blocks import block_label_index, predict_block
+
+    y_index = None if yb is None else block_label_index(classes, yb)
+    width = None if response == "decision_function" else classes.shape[0]
+    s = _binary_scores(predict_block(estimator, response, Xb, width), response)
+    if wb is not None and hasattr(wb, "to_numpy"):  # a pandas Series (nullable: NaN for NA)
+        wb = wb.to_numpy(dtype=float, na_value=np.nan)
     return _tally_block(
         s, y_index, wb, 2 if yb is not None else 1, resolution, n_replicates, seed
     )
@@ -314,9 +323,13 @@ def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, respo
 
     classes = np.asarray(estimator.classes_)
     if tally.total_weight <= 0:
-        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
-    weighted = np.flatnonzero(tally.label_weight > 0)
-    if weighted.shape[0] < 2:
+        raise ValueError(ZERO_WEIGHT)
+    if tally.rows_by_label is not None:
+        # the in-memory checks (two classes, two with weight), from the tallied row counts
+        from ._blocks import check_class_rows
+
+        check_class_rows(owner, classes, tally.rows_by_label, tally.weighted_rows_by_label)
+    elif np.count_nonzero(tally.label_weight > 0) < 2:
         raise ValueError(
             "`y` contains only 1 class (with positive weight); the held-out rows must contain "
             "at least two classes."
@@ -342,6 +355,7 @@ def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, respo
         n_folds=0,
         estimator=estimator,
         from_tally=True,
+        weighted_class_rows=tally.weighted_rows_by_label,
     )
 
 
@@ -370,14 +384,25 @@ def dask_predict(method: Any, X: Any, n_columns: int | None, dtype: Any = float)
 def _monitor_block(owner, est, source, seed, Xb, wb):
     """Prior estimate of one block on the worker that holds it (a block fits in memory)."""
     from .._validation import check_sample_weight
+    from ._blocks import n_block_rows, predict_block
 
-    proba = np.asarray(owner.estimator_.predict_proba(Xb), dtype=float)
+    if n_block_rows(Xb) == 0:  # an empty partition: no batch (left out, with a warning)
+        return None
+    proba = predict_block(owner.estimator_, "predict_proba", Xb, len(owner.classes_))
     return monitor_proba(est, source, seed, proba, check_sample_weight(wb, proba.shape[0]))
 
 
 def monitor_proba(est, source, seed, proba, w):
-    """One row of a monitor table from a batch's probabilities and weights (Dask or Spark)."""
+    """One row of a monitor table from a batch's probabilities and weights (Dask or Spark),
+    and the power of two the batch's weights were divided by (1.0 unless they lie beyond about
+    1e+-77, whose sums of squares would overflow or underflow; a batch's estimate does not
+    depend on the scale of its weights)."""
     from ._bootstrap import tally_prior_interval
+    from ._tally import weight_unit_of
+
+    unit = weight_unit_of(w.max()) if w.size else 1.0
+    if unit != 1.0:
+        w = w / unit
 
     if source is None or source.n_replicates == 0 or est.n_resamples == 0:
         res = est.estimate(proba, w, random_state=seed)
@@ -394,7 +419,7 @@ def monitor_proba(est, source, seed, proba, w):
     if interval is None:
         interval = np.column_stack([res.prior, res.prior])
     return (proba.shape[0], res.prior, interval[:, 0], interval[:, 1], res.shift_statistic,
-            res.shift_pvalue, res.converged)
+            res.shift_pvalue, res.converged), unit
 
 
 def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weight: Any):
@@ -442,7 +467,28 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
         ("shift_pvalue", float),
         ("converged", bool),
     ]
-    table = np.zeros(len(rows), dtype=dtype)
-    for i, r in enumerate(rows):
-        table[i] = (i, *r)
+    empty = [i for i, r in enumerate(rows) if r is None]
+    if empty:
+        warnings.warn(
+            f"PriorShiftWrapper.monitor: Dask block(s) {empty[:10]} of `X` have no rows; they "
+            "are left out of the table (its `batch` field keeps the block numbers).",
+            UserWarning,
+            stacklevel=4,
+        )
+    kept = [(i, r) for i, r in enumerate(rows) if r is not None]
+    if not kept:
+        raise ValueError("`X` has no rows; monitor needs at least one row.")
+    table = np.zeros(len(kept), dtype=dtype)
+    for j, (i, (r, _)) in enumerate(kept):
+        table[j] = (i, *r)
+    warn_monitor_units([u for _, (_, u) in kept])
     return table
+
+
+def warn_monitor_units(units: list) -> None:
+    """The wrappers' WeightScaleWarning, once, when some batch's weights were rescaled."""
+    from ._tally import warn_weight_unit
+
+    extreme = [u for u in units if u != 1.0]
+    if extreme:
+        warn_weight_unit(max(extreme), "PriorShiftWrapper.monitor", None, stacklevel=6)

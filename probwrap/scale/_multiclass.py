@@ -32,9 +32,17 @@ from typing import Any
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 
+from ._blocks import (
+    block_label_index,
+    block_weights,
+    check_class_rows,
+    class_rows,
+    predict_block,
+)
 from ._dask import _frozen_multiclass
 from ._multiclass_wrappers import _Smallest
-from ._rows import rows_of
+from ._rows import in_weight_unit, rows_of
+from ._tally import ZERO_WEIGHT, warn_weight_unit
 
 __all__ = ["fit_multiclass_source", "estimate_multiclass_target"]
 
@@ -43,29 +51,22 @@ _TINY = np.finfo(float).tiny
 
 # -- blocks kept on the workers -----------------------------------------------------------------
 def _source_block(estimator, classes, Xb, yb, wb):
-    p = np.asarray(estimator.predict_proba(Xb), dtype=float)
-    yb = np.asarray(yb).ravel()
-    pos = np.clip(np.searchsorted(classes, yb), 0, classes.shape[0] - 1)
-    bad = classes[pos] != yb
-    if np.any(bad):
-        raise ValueError(
-            f"`y` has labels {np.unique(yb[bad])[:5].tolist()} that the frozen estimator does "
-            f"not know; its classes are {classes.tolist()}."
-        )
-    w = np.ones(p.shape[0]) if wb is None else np.asarray(wb, dtype=float).ravel()
-    if w.shape[0] != p.shape[0] or not np.all(np.isfinite(w)) or np.any(w < 0):
-        raise ValueError("`sample_weight` must be finite, non-negative and one per row.")
+    pos = block_label_index(classes, yb)
+    w = block_weights(wb, pos.shape[0])
+    if pos.shape[0] == 0:  # an empty block (partition): kept as None, left out of every sum
+        return None
+    p = predict_block(estimator, "predict_proba", Xb, classes.shape[0])
     # the log-probabilities are taken at the fit's floor (chosen from all blocks) in each pass
     return p, None, pos, w
 
 
 def _target_block(estimator, calibrator, Xb, wb):
-    p = np.asarray(estimator.predict_proba(Xb), dtype=float)
+    p = predict_block(estimator, "predict_proba", Xb, len(estimator.classes_))
+    w = block_weights(wb, p.shape[0])
+    if p.shape[0] == 0:  # an empty block (partition): kept as None, left out of every sum
+        return None
     if calibrator is not None:
         p = calibrator.predict(p)
-    w = np.ones(p.shape[0]) if wb is None else np.asarray(wb, dtype=float).ravel()
-    if w.shape[0] != p.shape[0] or not np.all(np.isfinite(w)) or np.any(w < 0):
-        raise ValueError("`sample_weight` must be finite, non-negative and one per row.")
     return p, w
 
 
@@ -78,7 +79,8 @@ def _counts(block, k):
     positive = positive[positive > 0]
     return (np.bincount(y, weights=w, minlength=k), float(np.dot(w, w)),
             float(np.count_nonzero(w)),
-            _Smallest(float(positive.min()) if positive.size else np.inf))
+            _Smallest(float(positive.min()) if positive.size else np.inf),
+            *class_rows(y, w, k))
 
 
 def _scaling_terms(block, theta, n_scale, k, total, clip):
@@ -143,6 +145,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     Sets ``estimator_``, ``classes_`` (and feature attributes) on ``owner``; returns the
     estimator, whose ``n_resamples`` is 0 (no bootstrap for multiclass Dask input).
     """
+    from .._predictions import rows_standing_in
     from ..calibration._logodds import clip_from_smallest
     from ..shift import PriorEstimator
     from ..shift._calibration import (
@@ -160,16 +163,25 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     names = check_class_names(classes, k)
     parts = rows_of(X, y, sample_weight, estimator).persist(_source_block, estimator, classes)
     try:
-        class_weight, squared_weight, positive_rows, smallest = parts.reduce(_counts, k)
+        # weights beyond about 1e+-77 divided by a power of two, as in memory
+        parts, unit = in_weight_unit(parts, sample_weight is not None)
+        class_weight, squared_weight, positive_rows, smallest, rows, weighted = parts.reduce(
+            _counts, k
+        )
         total = float(class_weight.sum())
         if total <= 0:
-            raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+            raise ValueError(ZERO_WEIGHT)
+        # as in memory: two classes (two with weight); a class without rows is refused below
+        check_class_rows(owner, classes, rows, weighted, absent_warning=False)
+        warn_weight_unit(unit, type(owner).__name__, total, stacklevel=5)
         if np.any(class_weight <= 0):
             raise ValueError(
                 f"`y` has no (positively weighted) rows of "
                 f"{name_classes(np.flatnonzero(class_weight <= 0), names)}; every class needs "
                 "held-out rows to estimate its prior."
             )
+        owner.classes_ = classes  # (set again below) for the warning about classes of few rows
+        owner._warn_few_class_rows(*rows_standing_in(weighted))
         est = PriorEstimator(
             owner.method, calibration=owner.calibration, tol=owner.em_tol,
             max_iter=owner.em_max_iter, n_resamples=0,
@@ -278,20 +290,23 @@ def _labelled_interval_sums(block, calibrator, src):
     return labelled_sums(calibrator, p, y, w, src)
 
 
-def _target_interval_sums(estimator, calibrator, src, prior, Xb, wb):
+def _target_interval_sums(estimator, calibrator, src, prior, unit, Xb, wb):
     """Sums over an unlabelled block for the analytic interval at the maximum-likelihood
     ``prior``; from the model's raw posteriors (the calibration's Jacobian needs them, and the
-    persisted target blocks hold calibrated ones), so this pass predicts once more."""
+    persisted target blocks hold calibrated ones), so this pass predicts once more. The weights
+    are divided by ``unit`` (see ``in_weight_unit``)."""
     from ..shift._analytic import target_sums
 
-    p = np.asarray(estimator.predict_proba(Xb), dtype=float)
-    w = np.ones(p.shape[0]) if wb is None else np.asarray(wb, dtype=float).ravel()
-    if w.sum() <= 0:  # a block without weight adds nothing (its normalised sums are undefined)
-        return tuple(0.0 * x for x in target_sums(calibrator, p[:1], np.ones(1), src, prior))
+    k = src.shape[0]
+    p = predict_block(estimator, "predict_proba", Xb, k)
+    w = block_weights(wb, p.shape[0]) / unit
+    if w.sum() <= 0:  # a block without weight (or rows) adds nothing: zeros of the sums' shapes
+        probe = np.full((1, k), 1.0 / k)
+        return tuple(0.0 * x for x in target_sums(calibrator, probe, np.ones(1), src, prior))
     return target_sums(calibrator, p, w, src, prior)
 
 
-def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff):
+def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.0):
     """The in-memory analytic interval (``PriorEstimator.estimate`` with more than two classes)
     from per-block sums: the maximum-likelihood prior (EM without the shrinkage's pseudo-rows,
     started at the shrunk estimate), then one pass for the score sums. Returns ``(ml prior,
@@ -300,15 +315,21 @@ def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff):
     from ..shift._resample import _widen
 
     src = est.source_prior_
-    if float(est.prior_strength) > 0:
-        start = prior if np.all(prior > 0) else src.copy()
-        ml = _em_dask(parts, src, start, total, float(est.tol), int(est.max_iter))[0]
-    else:
-        ml = prior
-    sums = rows.map_reduce(_target_interval_sums, estimator, est.calibrator_, src, ml)
+    ml = _ml_prior(est, parts, prior, total)
+    sums = rows.map_reduce(_target_interval_sums, estimator, est.calibrator_, src, ml, unit)
     bounds = interval_from_sums(sums, n_eff, ml, est._labelled_cov, est.confidence_level)[0]
     level = est.confidence_level
     return ml, _widen(bounds, prior, ml, n_eff, level), _widen(bounds, ml, ml, n_eff, level)
+
+
+def _ml_prior(est, parts, prior, total):
+    """The maximum-likelihood prior (EM without the shrinkage's pseudo-rows, started at the
+    shrunk estimate ``prior``), as in memory for every EM estimate."""
+    src = est.source_prior_
+    if float(est.prior_strength) > 0:
+        start = prior if np.all(prior > 0) else src.copy()
+        return _em_dask(parts, src, start, total, float(est.tol), int(est.max_iter))[0]
+    return prior
 
 
 # -- target side ------------------------------------------------------------------------------
@@ -385,9 +406,12 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
     rows = rows_of(X, None, sample_weight, estimator)
     parts = rows.persist(_target_block, estimator, est.calibrator_)
     try:
+        # weights beyond about 1e+-77 divided by a power of two, as in memory
+        parts, unit = in_weight_unit(parts, sample_weight is not None)
         soft_mean, hard_mean, (total, squared, n_rows, entropy) = parts.reduce(_means, k)
         if total <= 0:
-            raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+            raise ValueError(ZERO_WEIGHT)
+        warn_weight_unit(unit, "PriorShiftWrapper.adapt", total, stacklevel=5)
         src = est.source_prior_
         method = est.method
         n_iter, converged, distance = 0, True, 0.0
@@ -420,11 +444,19 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         ml = ml_interval = interval = None
         if method == "em" and getattr(est, "_labelled_cov", None) is not None:
             ml, interval, ml_interval = _analytic_interval(est, estimator, rows, parts, prior,
-                                                           total, n_eff)
+                                                           total, n_eff, unit)
+        elif method == "em":
+            # as in memory, every EM estimate has its maximum-likelihood prior (the evidence
+            # gate's amplification below reads it)
+            ml = _ml_prior(est, parts, prior, total)
     finally:
         parts.release()
     from ..shift._estimator import _current_source_score
-    from ..shift._shift_tests import _null_harm_scale_moments, _score_stat_moments
+    from ..shift._shift_tests import (
+        _null_harm_scale_moments,
+        _score_stat_moments,
+        estimate_amplification,
+    )
 
     mean = su / total
     cov = suu / total - np.outer(mean, mean)
@@ -439,6 +471,11 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         loss = min(loss, float(reference))
     harm_scale = _null_harm_scale_moments(soft_mean / total, suu / total, loss, src,
                                           test.mean_cov)
+    if ml is not None and harm_scale:
+        # as in memory: the applied move is a share of EM's estimate, which can lie far beyond
+        # the one-step estimate the harm bound assumes (J = the weighted mean of u u')
+        harm_scale *= estimate_amplification((ml - src)[1:], suu / total, test.mean_cov,
+                                             test.raw)
     return PriorEstimate(
         prior=prior,
         method=method,

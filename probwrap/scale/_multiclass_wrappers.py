@@ -14,35 +14,34 @@ from typing import Any
 
 import numpy as np
 
+from ._blocks import (
+    block_label_index,
+    block_weights,
+    check_class_rows,
+    class_rows,
+    predict_block,
+)
+from ._tally import ZERO_WEIGHT
+
 __all__ = ["fit_multiclass_calibration", "first_block_row_costs", "heldout_cost_dask"]
 
 
 # -- CalibrationWrapper: temperature by reductions, binary maps one-vs-rest from tallies --------
 def _label_index(classes: np.ndarray, yb: Any) -> np.ndarray:
-    yb = np.asarray(yb).ravel()
-    pos = np.clip(np.searchsorted(classes, yb), 0, classes.shape[0] - 1)
-    bad = classes[pos] != yb
-    if np.any(bad):
-        raise ValueError(
-            f"`y` has labels {np.unique(yb[bad])[:5].tolist()} that the frozen estimator does "
-            f"not know; its classes are {classes.tolist()}."
-        )
-    return pos
+    return block_label_index(classes, yb)
 
 
-def _weights(wb: Any, n: int) -> np.ndarray:
-    w = np.ones(n) if wb is None else np.asarray(wb, dtype=float).ravel()
-    if w.shape[0] != n or not np.all(np.isfinite(w)) or np.any(w < 0):
-        raise ValueError("`sample_weight` must be finite, non-negative and one per row.")
-    return w
+_weights = block_weights
 
 
 def _wrapper_scores_block(owner, template, Xb, yb, wb):
-    values = getattr(owner.estimator_, owner.response_)(Xb)
-    scores = owner._to_scores(np.asarray(values, dtype=float))
-    return owner._map_input(template, scores), _label_index(owner.classes_, yb), _weights(
-        wb, scores.shape[0]
-    )
+    y = _label_index(owner.classes_, yb)
+    w = _weights(wb, y.shape[0])
+    k = owner.classes_.shape[0]
+    if y.shape[0] == 0:  # an empty block (partition): kept as None, left out of every sum
+        return None
+    scores = owner._to_scores(predict_block(owner.estimator_, owner.response_, Xb, k))
+    return owner._map_input(template, scores), y, w
 
 
 class _Smallest:
@@ -57,7 +56,7 @@ class _Smallest:
 
 def _smallest_positive_block(owner, Xb, yb, wb):
     """Smallest non-zero probability of the rows of positive weight (inf when none)."""
-    values = np.asarray(getattr(owner.estimator_, owner.response_)(Xb), dtype=float)
+    values = predict_block(owner.estimator_, owner.response_, Xb, owner.classes_.shape[0])
     w = _weights(wb, values.shape[0])
     v = values[w > 0]
     v = v[v > 0]
@@ -76,20 +75,26 @@ def _class_weight_terms(block, k):
     return np.bincount(y, weights=w, minlength=k).astype(float)
 
 
-def _square_terms(block):
-    s, _, w = block
+def _square_terms(block, k):
+    """Weighted sum of the squared centred scores, sum of weights and of squared weights, rows
+    of positive weight, then the rows of each class, and each class's rows of positive weight."""
+    s, y, w = block
     square = np.mean((s - s.mean(axis=1, keepdims=True)) ** 2, axis=1)
-    return np.array([w @ square, w.sum(), w @ w, np.count_nonzero(w)])
+    return np.concatenate([[w @ square, w.sum(), w @ w, np.count_nonzero(w)],
+                           *class_rows(y, w, k)])
 
 
 def _ovr_tallies_block(owner, resolution, Xb, yb, wb):
     from ._tally import _tally_block
 
-    values = getattr(owner.estimator_, owner.response_)(Xb)
-    scores = owner._to_scores(np.asarray(values, dtype=float))
-    ovr = owner._one_vs_rest_scores(scores)
     y = _label_index(owner.classes_, yb)
-    w = _weights(wb, scores.shape[0])
+    w = _weights(wb, y.shape[0])
+    k = owner.classes_.shape[0]
+    if y.shape[0] == 0:  # an empty block (partition)
+        ovr = np.empty((0, k))
+    else:
+        scores = owner._to_scores(predict_block(owner.estimator_, owner.response_, Xb, k))
+        ovr = owner._one_vs_rest_scores(scores)
     return [
         _tally_block(ovr[:, j], (y == j).astype(int), w, 2, resolution)
         for j in range(ovr.shape[1])
@@ -108,7 +113,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     from scipy.optimize import brentq
     from sklearn.base import clone
 
-    from .._predictions import resolve_response
+    from .._predictions import resolve_response, rows_standing_in
     from ..calibration._base import WeightScaleWarning, one_vs_rest_copy
     from ..calibration._temperature import (
         _LOG_SPAN,
@@ -117,7 +122,8 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
         _valid_shrinkage,
     )
     from ._dask import _frozen_multiclass, owner_resolution
-    from ._rows import rows_of
+    from ._rows import in_weight_unit, rows_of
+    from ._tally import warn_weight_unit
 
     estimator, classes = _frozen_multiclass(owner, y)
     k = classes.shape[0]
@@ -138,9 +144,16 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     if isinstance(template, TemperatureMap):
         parts = rows.persist(_wrapper_scores_block, owner, template)
         try:
-            sq, total, total_sq, n_rows = parts.reduce(_square_terms)
+            # weights beyond about 1e+-77 divided by a power of two, as in memory
+            parts, unit = in_weight_unit(parts, sample_weight is not None)
+            terms = parts.reduce(_square_terms, k)
+            sq, total, total_sq, n_rows = terms[:4]
             if total <= 0:
-                raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+                raise ValueError(ZERO_WEIGHT)
+            rows, weighted = terms[4 : 4 + k], terms[4 + k :]
+            check_class_rows(owner, classes, rows, weighted)
+            warn_weight_unit(unit, type(owner).__name__, total, stacklevel=6)
+            owner._warn_few_class_rows(*rows_standing_in(weighted))
             cal = clone(template)
             cal.classes_ = np.arange(k)
             cal.n_classes_ = k
@@ -213,8 +226,14 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     # one pass: every block tallies each class's one-vs-rest scores; merged class by class
     merged = rows.map_reduce(_ovr_tallies_block, owner, owner_resolution(owner))
     if merged[0].total_weight <= 0:
-        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+        raise ValueError(ZERO_WEIGHT)
+    # class j's tally has the rows of class j as its label 1
+    weighted = np.array([t.weighted_rows_by_label[1] for t in merged])
+    check_class_rows(owner, classes, np.array([t.rows_by_label[1] for t in merged]), weighted)
+    owner._warn_few_class_rows(*rows_standing_in(weighted))
     total = merged[0].total_weight
+    # every class's tally holds the same rows and weights, so the same weight unit
+    warn_weight_unit(merged[0].weight_unit, type(owner).__name__, total, stacklevel=6)
     pos = np.array([tally.label_weight[1] for tally in merged], dtype=float)
     fitted = (pos > 0) & (pos < total)
     maps: list = [None] * k
@@ -249,17 +268,47 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
 
 
 # -- CostPolicyWrapper: held-out cost of a fixed rule -----------------------------------------
+class _UnitSums:
+    """Weighted sums of a block, the last of them the sum of the weights, with the weights
+    divided by a power of two (``unit``, see :func:`probwrap.scale._tally.weight_unit_of`);
+    adding two aligns them to the larger unit of the two with weight (exact), so the total is
+    that of all weights divided by the unit of the largest weight."""
+
+    def __init__(self, values: np.ndarray, unit: float) -> None:
+        self.values = values
+        self.unit = unit
+
+    def __add__(self, other: _UnitSums) -> _UnitSums:
+        import math
+
+        units = [u.unit for u in (self, other) if u.values[-1] > 0]
+        unit = max(units) if units else 1.0
+        exp = math.frexp(unit)[1]
+        a, b = (np.ldexp(u.values, math.frexp(u.unit)[1] - exp) for u in (self, other))
+        return _UnitSums(a + b, unit)
+
+
 def _cost_block(policy, Xb, yb, wb):
-    proba = policy.estimator_.predict_proba(Xb)
+    """Weighted realised cost and total weight of a block (``_UnitSums``), then the rows of
+    each class and their rows of positive weight (not weights: added as they are)."""
+    from ._tally import weight_unit_of
+
+    k = policy.classes_.shape[0]
     y = _label_index(policy.classes_, yb)
-    w = _weights(wb, proba.shape[0])
+    w = _weights(wb, y.shape[0])
+    rows, weighted = class_rows(y, w, k)
+    if y.shape[0] == 0:  # an empty block (partition)
+        return _UnitSums(np.zeros(2), 1.0), rows, weighted
+    proba = predict_block(policy.estimator_, "predict_proba", Xb, k)
+    unit = weight_unit_of(w.max())
+    w = w / unit if unit != 1.0 else w
     costs = policy._costs_for(Xb)
     chosen = policy._decide(proba, costs)
     if costs.ndim == 2:
         realised = costs[y, chosen]
     else:
         realised = costs[np.arange(chosen.shape[0]), y, chosen]
-    return np.array([w @ realised, w.sum()])
+    return _UnitSums(np.array([w @ realised, w.sum()]), unit), rows, weighted
 
 
 def first_block_row_costs(
@@ -279,7 +328,15 @@ def heldout_cost_dask(policy: Any, X: Any, y: Any, sample_weight: Any) -> float:
 
     if y is None:
         raise ValueError(f"{type(policy).__name__} requires y to be passed, but the target y is None.")
-    sums = rows_of(X, y, sample_weight, policy.estimator_).map_reduce(_cost_block, policy)
-    if sums[1] <= 0:
-        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
-    return float(sums[0] / sums[1])
+    from ._tally import warn_weight_unit
+
+    sums, rows, weighted = rows_of(X, y, sample_weight, policy.estimator_).map_reduce(
+        _cost_block, policy
+    )
+    cost, total = sums.values
+    if total <= 0:
+        raise ValueError(ZERO_WEIGHT)
+    check_class_rows(policy, policy.classes_, rows, weighted)
+    # weights beyond about 1e+-77 were summed divided by a power of two: the in-memory warning
+    warn_weight_unit(sums.unit, type(policy).__name__, total, stacklevel=6)
+    return float(cost / total)

@@ -23,9 +23,68 @@ from typing import Any
 
 import numpy as np
 
-from ._tally import DEFAULT_RESOLUTION, replicate_seed
+from ._tally import (
+    DEFAULT_RESOLUTION,
+    ZERO_WEIGHT,
+    replicate_seed,
+    warn_weight_unit,
+    weight_unit_of,
+)
 
-__all__ = ["heldout_from_rows", "rows_of", "unlabelled_proba_from_rows"]
+__all__ = [
+    "heldout_from_rows",
+    "in_weight_unit",
+    "rows_of",
+    "unlabelled_proba_from_rows",
+]
+
+
+# -- weights far from 1 on kept blocks ----------------------------------------------------------
+class _Largest:
+    """A block result whose "sum" (the reduction over blocks) is the larger value."""
+
+    def __init__(self, value: float) -> None:
+        self.value = value
+
+    def __add__(self, other: _Largest) -> _Largest:
+        return _Largest(max(self.value, other.value))
+
+
+def _largest_weight(block: Any) -> _Largest:
+    """Largest weight of a kept block (its weights are the block's last entry)."""
+    w = np.asarray(block[-1])
+    return _Largest(float(w.max()) if w.size else 0.0)
+
+
+def _scaled_call(block: Any, fn: Any, unit: float, *args: Any) -> Any:
+    """``fn`` of a kept block whose weights (its last entry) are divided by ``unit``."""
+    return fn((*block[:-1], np.asarray(block[-1]) / unit), *args)
+
+
+class _ScaledBlocks:
+    """Kept blocks seen with their weights divided by a power of two (``unit``)."""
+
+    def __init__(self, parts: Any, unit: float) -> None:
+        self._parts = parts
+        self.unit = unit
+
+    def reduce(self, fn: Any, *args: Any) -> Any:
+        return self._parts.reduce(_scaled_call, fn, self.unit, *args)
+
+    def release(self) -> None:
+        self._parts.release()
+
+
+def in_weight_unit(parts: Any, weighted: bool) -> tuple[Any, float]:
+    """Kept blocks (``rows.persist``) with weights beyond about 1e+-77 divided by a power of
+    two, as the wrappers rescale in-memory weights (``probwrap._heldout.rescale_extreme_weights``):
+    ``(blocks, unit)``. One more pass over the kept blocks for their largest weight, only when
+    weights were given (``weighted``); ordinary weights come back untouched with unit 1.0.
+    """
+    if not weighted:
+        return parts, 1.0
+    unit = weight_unit_of(parts.reduce(_largest_weight).value)
+    return (parts if unit == 1.0 else _ScaledBlocks(parts, unit)), unit
 
 
 def _is_spark(X: Any) -> bool:
@@ -101,6 +160,8 @@ def heldout_from_rows(owner: Any, X: Any, y: Any, sample_weight: Any, response: 
         estimator, response, X, y, sample_weight, resolution=owner_resolution(owner),
         n_replicates=n_rep, seed=seed, stream=0,
     )
+    # weights beyond about 1e+-77 were tallied divided by a power of two: the in-memory warning
+    warn_weight_unit(tally.weight_unit, type(owner).__name__, tally.total_weight, stacklevel=6)
     return heldout_rows_from_tally(owner, estimator, tally, response)
 
 
@@ -112,12 +173,14 @@ def unlabelled_proba_from_rows(
     n_replicates: int = 0,
     random_state: Any = None,
     resolution: float = DEFAULT_RESOLUTION,
+    owner: str = "PriorShiftWrapper.adapt",
 ):
     """Binary posteriors of unlabelled Dask or Spark rows as tally rows:
     ``(proba (m, 2), weights, tally)``.
 
     Replicates (if any) use stream 1 of the seed, so they are independent of the labelled
-    tally's (stream 0) for the same ``random_state``.
+    tally's (stream 0) for the same ``random_state``. Weights beyond about 1e+-77 come back
+    divided by a power of two, with the in-memory path's warning naming ``owner``.
     """
     tally_of_model, engine = _tally_step(X)
     _check_binary(estimator, engine)
@@ -129,6 +192,7 @@ def unlabelled_proba_from_rows(
     if tally.n_rows == 0:
         raise ValueError("`X` has no rows; a tally needs at least one row.")
     if tally.total_weight <= 0:
-        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+        raise ValueError(ZERO_WEIGHT)
+    warn_weight_unit(tally.weight_unit, owner, tally.total_weight, stacklevel=5)
     proba, w = tally.to_scores(proba=True)
     return proba, w, tally

@@ -19,8 +19,10 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import plain
 from ._tally import (
     DEFAULT_RESOLUTION,
+    ZERO_WEIGHT,
     ScoreTally,
     _check_resolution,
     _combine,
@@ -100,6 +102,27 @@ class _Shipped:
         return _UNPICKLED[key]
 
 
+class _WorkerError:
+    """A ValueError raised on an executor (bad labels, weights or model output in a partition),
+    sent back to the driver as the partition's result: a failed Spark job would show the user a
+    Java stack trace around the message; the driver raises it as a ValueError, as in memory."""
+
+    def __init__(self, message: str) -> None:
+        self.message = message
+
+
+def _failure(exc: ValueError) -> bytes:
+    return pickle.dumps(_WorkerError(str(exc)))
+
+
+def _loaded(blob: Any) -> Any:
+    """A partition's pickled result; a ValueError raised on the executor is raised here."""
+    value = pickle.loads(bytes(blob))
+    if isinstance(value, _WorkerError):
+        raise ValueError(value.message)
+    return value
+
+
 def _broadcast(frame: Any, value: Any) -> Any:
     """Send ``value`` to the executors once (a Spark broadcast variable)."""
     try:
@@ -170,15 +193,10 @@ def _features(pdf: Any, columns: list, named: bool) -> Any:
 
 
 def _label_index(classes: np.ndarray, yb: np.ndarray) -> np.ndarray:
-    """Indices of the labels ``yb`` in the sorted ``classes`` (unknown labels are refused)."""
-    pos = np.clip(np.searchsorted(classes, yb), 0, classes.shape[0] - 1)
-    bad = classes[pos] != yb
-    if np.any(bad):
-        raise ValueError(
-            f"`y` has labels {np.unique(yb[bad].astype(str))[:5].tolist()} that the frozen "
-            f"estimator does not know; its classes are {classes.tolist()}."
-        )
-    return pos
+    """Indices of the labels ``yb`` in the sorted ``classes`` (refused as in memory)."""
+    from ._blocks import block_label_index
+
+    return block_label_index(classes, yb)
 
 
 # -- tallies partition by partition --------------------------------------------------------------
@@ -224,18 +242,22 @@ def _tally_partitions(
                 s, y, w, labelled_cols, resolution, n_replicates, [seed, stream, part, chunk]
             )
 
-        for pdf in batches:
-            if len(pdf) == 0:
-                continue
-            held.append(convert(pdf, value))
-            n_held += len(pdf)
-            if n_held >= CHUNK_ROWS:
+        try:
+            for pdf in batches:
+                if len(pdf) == 0:
+                    continue
+                held.append(convert(pdf, value))
+                n_held += len(pdf)
+                if n_held >= CHUNK_ROWS:
+                    t = flush()
+                    total = t if total is None else total.merge(t)
+                    held, n_held, chunk = [], 0, chunk + 1
+            if held:
                 t = flush()
                 total = t if total is None else total.merge(t)
-                held, n_held, chunk = [], 0, chunk + 1
-        if held:
-            t = flush()
-            total = t if total is None else total.merge(t)
+        except ValueError as exc:  # raised on the driver (see _WorkerError)
+            yield pd.DataFrame({"partition": [part], "tally": [_failure(exc)]})
+            return
         if total is not None:
             yield pd.DataFrame({"partition": [part], "tally": [pickle.dumps(total)]})
 
@@ -245,7 +267,7 @@ def _tally_partitions(
     if not rows:
         raise ValueError("The Spark DataFrame has no rows; a tally needs at least one row.")
     rows = sorted(rows, key=lambda r: r["partition"])
-    return merge_tallies(pickle.loads(bytes(r["tally"])) for r in rows)
+    return merge_tallies([_loaded(r["tally"]) for r in rows])
 
 
 def _convert_scores(pdf: Any, spec: tuple) -> tuple:
@@ -287,7 +309,7 @@ def spark_tally_scores(
         n_labels if label is not None else 1, resolution, n_replicates, seed, 0,
     )
     if tally.total_weight <= 0:
-        raise ValueError("`sample_weight` is zero for every row; at least one must be positive.")
+        raise ValueError(ZERO_WEIGHT)
     return tally
 
 
@@ -399,9 +421,10 @@ def _gather(rows: list) -> Any:
     if not rows:
         raise ValueError("The Spark DataFrame has no rows; at least one row is needed.")
     rows = sorted(rows, key=lambda r: r["partition"])
-    out = pickle.loads(bytes(rows[0]["value"]))
-    for r in rows[1:]:
-        out = _combine(out, pickle.loads(bytes(r["value"])))
+    values = [_loaded(r["value"]) for r in rows]  # (raises a partition's ValueError first)
+    out = values[0]
+    for v in values[1:]:
+        out = _combine(out, v)
     return out
 
 
@@ -417,10 +440,19 @@ class SparkBlocks:
 
         def reduce_partition(batches):
             total = None
-            for pdf in batches:
-                for blob in pdf["block"]:
-                    r = fn(pickle.loads(blob), *args)
-                    total = r if total is None else _combine(total, r)
+            try:
+                for pdf in batches:
+                    for blob in pdf["block"]:
+                        block = pickle.loads(blob)
+                        if isinstance(block, _WorkerError):  # made when the block was kept
+                            raise ValueError(block.message)
+                        if block is None:  # an empty block
+                            continue
+                        r = fn(block, *args)
+                        total = r if total is None else _combine(total, r)
+            except ValueError as exc:  # raised on the driver (see _WorkerError)
+                yield pd.DataFrame({"partition": [_partition_id()], "value": [_failure(exc)]})
+                return
             if total is not None:
                 yield pd.DataFrame({"partition": [_partition_id()], "value": [pickle.dumps(total)]})
 
@@ -465,9 +497,13 @@ class SparkRows:
         def map_partition(batches):
             f, a = shared.value
             total = None
-            for pdf in _chunks(batches, CHUNK_ROWS):
-                r = f(*a, *_split(*spec, pdf))
-                total = r if total is None else _combine(total, r)
+            try:
+                for pdf in _chunks(batches, CHUNK_ROWS):
+                    r = f(*a, *_split(*spec, pdf))
+                    total = r if total is None else _combine(total, r)
+            except ValueError as exc:  # raised on the driver (see _WorkerError)
+                yield pd.DataFrame({"partition": [_partition_id()], "value": [_failure(exc)]})
+                return
             if total is not None:
                 yield pd.DataFrame({"partition": [_partition_id()], "value": [pickle.dumps(total)]})
 
@@ -485,8 +521,11 @@ class SparkRows:
 
         def make_blocks(batches):
             f, a = shared.value
-            for pdf in _chunks(batches, PERSIST_ROWS):
-                yield pd.DataFrame({"block": [pickle.dumps(f(*a, *_split(*spec, pdf)))]})
+            try:
+                for pdf in _chunks(batches, PERSIST_ROWS):
+                    yield pd.DataFrame({"block": [pickle.dumps(f(*a, *_split(*spec, pdf)))]})
+            except ValueError as exc:  # kept as a block, raised on the driver by the reductions
+                yield pd.DataFrame({"block": [_failure(exc)]})
 
         cached = self._frame.select(*self._columns).mapInPandas(make_blocks, "block binary")
         return SparkBlocks(cached.cache())
@@ -558,35 +597,53 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         T.StructField("shift_statistic", T.DoubleType()),
         T.StructField("shift_pvalue", T.DoubleType()),
         T.StructField("converged", T.BooleanType()),
+        T.StructField("weight_unit", T.DoubleType()),
+        T.StructField("error", T.StringType()),
     ])
 
     def estimate_batch(pdf):
+        import pandas as pd
+
+        key = pdf[batch_col].iloc[0]
+        try:
+            return estimate(pdf, key)
+        except ValueError as exc:  # raised on the driver, as in memory
+            return pd.DataFrame({
+                "batch": [key], "n_rows": [len(pdf)], "prior": [[]], "lower": [[]],
+                "upper": [[]], "shift_statistic": [np.nan], "shift_pvalue": [np.nan],
+                "converged": [False], "weight_unit": [1.0], "error": [str(exc)],
+            })
+
+    def estimate(pdf, key):
         import pandas as pd
 
         from .._validation import check_sample_weight
         from ._dask import monitor_proba
 
         model, prior_est, src, seed_of = shared.value
-        key = pdf[batch_col].iloc[0]
         proba = np.asarray(model.predict_proba(_features(pdf, features, named)), dtype=float)
         w = check_sample_weight(
             None if weight is None else pdf[weight].to_numpy(dtype=float, na_value=np.nan),
             proba.shape[0],
         )
         order = np.lexsort((w, *proba.T[::-1]))  # by class-0 probability, ..., then weight
-        row = monitor_proba(prior_est, src, seed_of[key], proba[order], w[order])
+        row, unit = monitor_proba(prior_est, src, seed_of[key], proba[order], w[order])
         n, prior, lower, upper, stat, pvalue, conv = row
         return pd.DataFrame({
             "batch": [key], "n_rows": [int(n)], "prior": [list(map(float, prior))],
             "lower": [list(map(float, lower))], "upper": [list(map(float, upper))],
             "shift_statistic": [float(stat) if stat is not None else np.nan],
             "shift_pvalue": [float(pvalue) if pvalue is not None else np.nan],
-            "converged": [bool(conv)],
+            "converged": [bool(conv)], "weight_unit": [float(unit)], "error": [None],
         })
 
     rows = X.select(*features, *named_cols).groupBy(batch_col).applyInPandas(
         estimate_batch, schema
     ).collect()
+    failed = [r for r in rows if r["error"] is not None]
+    if failed:
+        failed = min(failed, key=lambda r: r["batch"])
+        raise ValueError(f"Batch {plain(failed['batch'])!r}: {failed['error']}")
     by_label = {r["batch"]: r for r in rows}
     k = est.n_classes_
     label_arr = np.asarray(labels)
@@ -605,6 +662,9 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         r = by_label[lab]
         table[i] = (lab, r["n_rows"], r["prior"], r["lower"], r["upper"], r["shift_statistic"],
                     r["shift_pvalue"], r["converged"])
+    from ._dask import warn_monitor_units
+
+    warn_monitor_units([r["weight_unit"] for r in rows])
     return table
 
 

@@ -16,15 +16,17 @@ estimators. Weights count as row frequencies there, so these fits are fits to th
 
 from __future__ import annotations
 
+import math
 import numbers
+import warnings
 from typing import Any
 
 import numpy as np
 from scipy.special import expit
 
-from .._validation import check_same_length, check_scores, plain
+from .._validation import check_same_length, check_scores, plain, power_of_two_unit
 
-__all__ = ["DEFAULT_RESOLUTION", "ScoreTally", "merge_tallies"]
+__all__ = ["DEFAULT_RESOLUTION", "ScoreTally", "merge_tallies", "warn_weight_unit", "weight_unit_of"]
 
 #: Default bin width on the log-odds scale. Replacing every score by its bin's mean changes the
 #: log loss of a fitted Platt, beta or temperature map by far less than 1e-4 at this width (the
@@ -33,6 +35,54 @@ DEFAULT_RESOLUTION = 1e-3
 
 # Largest |score / resolution| that still fits comfortably into int64 bin indices.
 _MAX_INDEX = 2.0**62
+
+# Weights whose largest entry lies outside [2**-256, 2**256] (about 1e-77 to 1e77) are tallied
+# divided by a power of two, as the wrappers rescale in-memory weights
+# (probwrap._heldout.rescale_extreme_weights): sums of their squares would overflow or underflow.
+_WEIGHT_LOW = 2.0**-256
+_WEIGHT_HIGH = 2.0**256
+
+
+def weight_unit_of(largest: float) -> float:
+    """The power of two extreme weights are divided by, from the largest weight of some rows:
+    1.0 when it lies in about [1e-77, 1e77] (or is 0), else ``2**floor(log2(largest))``.
+
+    Applied block by block and aligned at merges (the larger unit of two blocks with weight
+    wins), it gives the unit of the largest weight of all rows, as in memory.
+
+    Examples
+    --------
+    >>> weight_unit_of(3.0), weight_unit_of(2.0**1000 * 1.5) == 2.0**1000
+    (1.0, True)
+    """
+    top = float(largest)
+    if not top > 0.0 or _WEIGHT_LOW <= top <= _WEIGHT_HIGH or not math.isfinite(top):
+        return 1.0
+    return power_of_two_unit(np.array([top]))
+
+
+def _exponent(unit: float) -> int:
+    return math.frexp(unit)[1] - 1
+
+
+def warn_weight_unit(unit: float, owner: str, total: float | None, *,
+                     name: str = "sample_weight", stacklevel: int = 3) -> None:
+    """The :class:`~probwrap.calibration.WeightScaleWarning` of the wrappers' in-memory path
+    (``rescale_extreme_weights``) for rows tallied or summed where they live, when their
+    weights were divided by ``unit`` (nothing when ``unit`` is 1); ``total`` is the sum of the
+    divided weights (None: not stated)."""
+    if unit == 1.0:
+        return
+    from ..calibration._base import WeightScaleWarning
+
+    summed = "" if total is None else f", and as row counts they now sum to {total:.4g}"
+    warnings.warn(
+        f"{owner}: `{name}` reaches {unit:.3g} or more (below {2 * unit:.3g}); weights this far "
+        f"from 1 overflow or underflow the sums of squares the fit needs, so they are divided "
+        f"by 2**{_exponent(unit)} (exact; the ratios between rows are unchanged{summed}).",
+        WeightScaleWarning,
+        stacklevel=stacklevel,
+    )
 
 
 def _check_resolution(resolution: Any) -> float:
@@ -66,6 +116,19 @@ def replicate_seed(random_state: Any) -> int:
     from sklearn.utils import check_random_state
 
     return int(check_random_state(random_state).randint(2**31 - 1))
+
+
+#: The wrappers' message for weights that are all zero (as ``check_sample_weight`` says it).
+ZERO_WEIGHT = "`sample_weight` is zero for every row; at least one weight must be positive."
+
+
+def check_block_weights(w: np.ndarray, name: str = "sample_weight") -> None:
+    """Refuse NaN, infinite or negative weights of one block of rows, with the messages of
+    ``check_sample_weight`` (a block may have only zero weights; the total is checked later)."""
+    if not np.all(np.isfinite(w)):
+        raise ValueError(f"`{name}` contains NaN or infinite values.")
+    if w.size and w.min() < 0:
+        raise ValueError(f"`{name}` must be non-negative; got a minimum of {w.min():.6g}.")
 
 
 def _check_n_labels(n_labels: Any) -> int:
@@ -105,6 +168,16 @@ class ScoreTally:
         row with its weight times an independent Poisson(1) draw (see :func:`tally_scores`).
     squared_weight : float, default=None
         Sum of the squared row weights (for the effective number of rows); None if unknown.
+    rows_by_label : ndarray of int64 of shape (n_labels,), default=None
+        Number of tallied rows of each label, whatever their weight (None if unknown).
+    weighted_rows_by_label : ndarray of int64 of shape (n_labels,), default=None
+        Number of tallied rows of each label with a positive weight (None if unknown).
+    weight_unit : float, default=1.0
+        The rows' weights were divided by this power of two before they were tallied
+        (``counts``, ``score_sums``, ``replicates`` and ``squared_weight`` are in its units): 1.0
+        unless the largest weight lies outside about [1e-77, 1e77], whose sums of squares would
+        overflow or underflow. Tallies with different units merge exactly (the one with the
+        smaller unit is rescaled by a power of two).
 
     Examples
     --------
@@ -127,6 +200,9 @@ class ScoreTally:
         labelled: bool = True,
         replicates: np.ndarray | None = None,
         squared_weight: float | None = None,
+        weight_unit: float = 1.0,
+        rows_by_label: np.ndarray | None = None,
+        weighted_rows_by_label: np.ndarray | None = None,
     ) -> None:
         self.bins = np.asarray(bins, dtype=np.int64)
         self.counts = np.asarray(counts, dtype=float)
@@ -152,6 +228,29 @@ class ScoreTally:
                 f"{self.counts.shape[1]}); got {self.replicates.shape}."
             )
         self.squared_weight = None if squared_weight is None else float(squared_weight)
+        unit = float(weight_unit)
+        if not (unit > 0 and math.isfinite(unit) and math.frexp(unit)[0] == 0.5):
+            raise ValueError(f"`weight_unit` must be a power of two; got {plain(weight_unit)!r}.")
+        self.weight_unit = unit
+        self.rows_by_label = self._row_counts(rows_by_label, "rows_by_label")
+        self.weighted_rows_by_label = self._row_counts(
+            weighted_rows_by_label, "weighted_rows_by_label"
+        )
+
+    def _row_counts(self, values: Any, name: str) -> np.ndarray | None:
+        if values is None:
+            return None
+        out = np.asarray(values, dtype=np.int64)
+        if out.shape != (self.n_labels,):
+            raise ValueError(f"`{name}` must have shape ({self.n_labels},); got {out.shape}.")
+        return out
+
+    def __setstate__(self, state: dict) -> None:
+        # tallies pickled before these attributes existed: weights as given, row counts unknown
+        state.setdefault("weight_unit", 1.0)
+        state.setdefault("rows_by_label", None)
+        state.setdefault("weighted_rows_by_label", None)
+        self.__dict__.update(state)
 
     # -- summaries -------------------------------------------------------------------------
     @property
@@ -299,34 +398,56 @@ class ScoreTally:
                 f"{'labelled' if self.labelled else 'unlabelled'} and {other.n_labels} "
                 f"{'labelled' if other.labelled else 'unlabelled'})."
             )
-        bins = np.concatenate([self.bins, other.bins])
-        uniq, inv = np.unique(bins, return_inverse=True)
-        m = uniq.shape[0]
-        counts = np.concatenate([self.counts, other.counts])
-        merged = np.column_stack(
-            [np.bincount(inv, weights=counts[:, j], minlength=m) for j in range(self.n_labels)]
-        )
-        sums = np.bincount(
-            inv, weights=np.concatenate([self.score_sums, other.score_sums]), minlength=m
-        )
         if self.n_replicates != other.n_replicates:
             raise ValueError(
                 f"Tallies with different numbers of bootstrap replicates cannot be merged "
                 f"({self.n_replicates} and {other.n_replicates})."
             )
+        # a common unit for the weights: the larger of the two (a tally without weight has none)
+        units = [t.weight_unit for t in (self, other) if np.any(t.counts > 0)]
+        unit = max(units) if units else 1.0
+        a, b = self._in_unit(unit), other._in_unit(unit)
+        bins = np.concatenate([a.bins, b.bins])
+        uniq, inv = np.unique(bins, return_inverse=True)
+        m = uniq.shape[0]
+        counts = np.concatenate([a.counts, b.counts])
+        merged = np.column_stack(
+            [np.bincount(inv, weights=counts[:, j], minlength=m) for j in range(self.n_labels)]
+        )
+        sums = np.bincount(
+            inv, weights=np.concatenate([a.score_sums, b.score_sums]), minlength=m
+        )
         reps = None
         if self.replicates is not None:
             reps = np.zeros((self.n_replicates, m, self.n_labels))
-            reps[:, inv[: self.n_bins]] += self.replicates  # bins of one tally are distinct
-            reps[:, inv[self.n_bins :]] += other.replicates
+            reps[:, inv[: a.n_bins]] += a.replicates  # bins of one tally are distinct
+            reps[:, inv[a.n_bins :]] += b.replicates
         sq = (
             None
-            if self.squared_weight is None or other.squared_weight is None
-            else self.squared_weight + other.squared_weight
+            if a.squared_weight is None or b.squared_weight is None
+            else a.squared_weight + b.squared_weight
         )
         return ScoreTally(
             uniq, merged, sums, self.resolution, self.n_rows + other.n_rows, self.labelled,
-            reps, sq,
+            reps, sq, unit, _add_counts(self.rows_by_label, other.rows_by_label),
+            _add_counts(self.weighted_rows_by_label, other.weighted_rows_by_label),
+        )
+
+    def _in_unit(self, unit: float) -> ScoreTally:
+        """This tally with its weights expressed in ``unit`` (a power of two not below its own);
+        exact but for weights that underflow, whose bins are dropped (as the rows' weights
+        divided by ``unit`` in memory would be 0 or subnormal there)."""
+        if unit == self.weight_unit:
+            return self
+        shift = _exponent(self.weight_unit) - _exponent(unit)
+        counts = np.ldexp(self.counts, shift)
+        keep = counts.sum(axis=1) > 0
+        reps = None if self.replicates is None else np.ldexp(self.replicates, shift)[:, keep]
+        sq = None if self.squared_weight is None else float(np.ldexp(self.squared_weight, 2 * shift))
+        return ScoreTally(
+            self.bins[keep], counts[keep], np.ldexp(self.score_sums, shift)[keep],
+            self.resolution, self.n_rows, self.labelled, reps, sq, unit, self.rows_by_label,
+            self.weighted_rows_by_label,
         )
 
     __add__ = merge
@@ -337,6 +458,10 @@ class ScoreTally:
             f"ScoreTally({self.n_rows} rows, {self.n_bins} bins, {kind}, "
             f"resolution={plain(self.resolution)!r})"
         )
+
+
+def _add_counts(a: np.ndarray | None, b: np.ndarray | None) -> np.ndarray | None:
+    return None if a is None or b is None else a + b
 
 
 def _two_column_proba(scores: np.ndarray) -> np.ndarray:
@@ -358,7 +483,8 @@ def _tally_block(
     draws of the block's rows come from ``numpy.random.default_rng(seed)``, so they depend only
     on ``seed`` (the caller puts the block index into it), not on where the block is tallied.
     """
-    s = check_scores(scores, name="scores")
+    # an empty block (an empty Dask partition) gives an empty tally; check_scores refuses it
+    s = np.asarray(scores, dtype=float) if len(scores) == 0 else check_scores(scores, name="scores")
     n = s.shape[0]
     cols_out = n_labels if y is not None else 1
     if n == 0:
@@ -366,7 +492,7 @@ def _tally_block(
             np.empty(0, np.int64), np.empty((0, cols_out)), np.empty(0), resolution, 0,
             y is not None,
             np.empty((n_replicates, 0, cols_out)) if n_replicates else None,
-            0.0,
+            0.0, 1.0, np.zeros(cols_out, np.int64), np.zeros(cols_out, np.int64),
         )
     if y is not None:
         y_arr = np.asarray(y)
@@ -395,8 +521,11 @@ def _tally_block(
         w = np.asarray(sample_weight, dtype=float)
         if w.ndim != 1 or w.shape[0] != n:
             raise ValueError(f"`sample_weight` has shape {w.shape} but the data have {n} rows.")
-        if not np.all(np.isfinite(w)) or np.any(w < 0):
-            raise ValueError("`sample_weight` must be finite and non-negative.")
+        check_block_weights(w)
+    # weights far from 1 are tallied divided by a power of two (see ScoreTally.weight_unit)
+    unit = 1.0 if sample_weight is None else weight_unit_of(w.max())
+    if unit != 1.0:
+        w = w / unit
     scaled = s / resolution
     if np.max(np.abs(scaled)) >= _MAX_INDEX:
         raise ValueError(
@@ -427,9 +556,17 @@ def _tally_block(
         for b in range(n_replicates):  # one replicate at a time: memory O(n + m), not O(B n)
             wb = w * rng.poisson(1.0, size=n)
             reps[b] = np.bincount(cell, weights=wb, minlength=m * cols).reshape(m, cols)[occupied]
+    # rows of each label (unit weights: the weighted counts themselves), and those of them with
+    # a positive weight (all of them unless some weight is 0)
+    if sample_weight is None:
+        rows = np.rint(counts.sum(axis=0)).astype(np.int64)
+        weighted = rows
+    else:
+        rows = np.bincount(labels_of, minlength=cols)
+        weighted = rows if w.min() > 0 else np.bincount(labels_of[w > 0], minlength=cols)
     return ScoreTally(
         bins, counts[occupied], sums[occupied], resolution, n, y is not None, reps,
-        float(np.dot(w, w)),
+        float(np.dot(w, w)), unit, rows, weighted,
     )
 
 
