@@ -18,7 +18,6 @@ metadata routing enabled, when it is requested with ``set_fit_request``).
 from __future__ import annotations
 
 import dataclasses
-import math
 import numbers
 import warnings
 from typing import Any
@@ -41,9 +40,8 @@ from ._validation import (
     check_sample_weight,
     check_target_labels,
     plain,
-    power_of_two_unit,
 )
-from .calibration._base import WeightScaleWarning
+from .calibration._base import rescale_extreme_weights
 
 __all__ = ["HeldOutClassifierBase", "HeldOutPredictions"]
 
@@ -113,48 +111,6 @@ def _predict_in_chunks(method: Any, X: Any) -> np.ndarray:
     for start in range(PREDICT_CHUNK_ROWS, n, PREDICT_CHUNK_ROWS):
         stop = min(start + PREDICT_CHUNK_ROWS, n)
         out[start:stop] = np.asarray(method(X[start:stop]), dtype=float)
-    return out
-
-
-#: the wrappers rescale weights whose largest entry lies outside [2**-256, 2**256] (about 1e-77
-#: to 1e77): squares of the rescaled weights summed over a billion rows stay far inside the float
-#: range
-_WEIGHT_LOW = 2.0**-256
-_WEIGHT_HIGH = 2.0**256
-
-
-def rescale_extreme_weights(sw: np.ndarray, owner: str, name: str = "sample_weight") -> np.ndarray:
-    """Checked weights divided by a power of two (exact) when the largest lies outside about
-    [1e-77, 1e77], with a :class:`~probwrap.calibration.WeightScaleWarning` naming ``owner``.
-
-    The wrappers' steps sum squares of weights (Kish's size, variances, Newton steps), which
-    overflow or underflow there: without this, weights of 2**1000 stopped ``method="auto"``
-    with a ZeroDivisionError and gave ``PriorShiftWrapper`` a NaN prior. No data have that many
-    (or that few) rows, so the weights are taken as relative ones; the ratios between rows are
-    unchanged. The array-level maps and metrics keep such weights as given (frequencies).
-
-    Examples
-    --------
-    >>> import warnings
-    >>> import numpy as np
-    >>> with warnings.catch_warnings():
-    ...     warnings.simplefilter("ignore")
-    ...     rescale_extreme_weights(np.array([2.0**300, 2.0**301]), "Demo").tolist()
-    [0.5, 1.0]
-    """
-    top = float(sw.max()) if sw.size else 1.0
-    if top <= 0.0 or _WEIGHT_LOW <= top <= _WEIGHT_HIGH:
-        return sw
-    unit = power_of_two_unit(sw)
-    out = sw / unit
-    warnings.warn(
-        f"{owner}: `{name}` reaches {top:.3g}; weights this far from 1 overflow or underflow "
-        f"the sums of squares the fit needs, so they are divided by 2**"
-        f"{math.frexp(unit)[1] - 1} (exact; the ratios between rows are unchanged, and as row "
-        f"counts they now sum to {float(out.sum()):.4g}).",
-        WeightScaleWarning,
-        stacklevel=4,
-    )
     return out
 
 

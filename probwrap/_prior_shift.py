@@ -609,6 +609,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
             return monitor_dask(self, X, batches, batch_size, sample_weight)
         proba = self._inner_output(X, "predict_proba")
+        if sample_weight is not None:
+            # as in adapt: weights beyond about 1e+-77 are taken as relative ones
+            sample_weight = rescale_extreme_weights(
+                check_sample_weight(sample_weight, proba.shape[0]), "PriorShiftWrapper.monitor"
+            )
         est = self.prior_estimator_
         source = getattr(self, "_source_tally", None)
         if source is None or source.n_replicates == 0 or est.n_resamples == 0:

@@ -10,7 +10,7 @@ import numpy as np
 from scipy.stats import norm
 
 from .._validation import check_proba, check_sample_weight, plain
-from ..calibration._base import WeightScaleWarning, count_weights
+from ..calibration._base import WeightScaleWarning, count_weights, rescale_extreme_weights
 from ..decision._bayes import bayes_actions
 from ..decision._costs import check_cost_matrix
 from ._adjust import adjust_to_prior, check_prior
@@ -301,6 +301,8 @@ def expected_cost_by_batch(
     n, k = p.shape
     matrix = check_cost_matrix(costs, n_classes=k)
     w = check_sample_weight(sample_weight, n)
+    if sample_weight is not None:
+        w = rescale_extreme_weights(w, "expected_cost_by_batch", stacklevel=3)
     w, rescaled = count_weights(w)
     if rescaled:
         warnings.warn(

@@ -9,6 +9,7 @@ import numpy as np
 from sklearn.utils import check_random_state
 
 from .._validation import check_proba, check_sample_weight, plain
+from ..calibration._base import rescale_extreme_weights
 from ._estimator import PriorEstimator
 
 __all__ = ["prior_by_batch"]
@@ -61,6 +62,9 @@ def prior_by_batch(
     p = check_proba(proba, name="proba", ndim=2)
     n, k = p.shape
     w = check_sample_weight(sample_weight, n)
+    if sample_weight is not None:
+        # once for all batches (each batch's estimate does not change when its weights scale)
+        w = rescale_extreme_weights(w, "prior_by_batch", stacklevel=3)
     if (batches is None) == (batch_size is None):
         raise ValueError("Give exactly one of `batches` (a label per row) and `batch_size`.")
     if batch_size is not None:

@@ -198,7 +198,7 @@ def bbse_prior(
     >>> bbse_prior(proba, confusion, [0.5, 0.5]).prior.round(4)
     array([0.3333, 0.6667])
     """
-    p, w = _check_target(proba, sample_weight)
+    p, w = _check_target(proba, sample_weight, owner="bbse_prior")
     k = p.shape[1]
     c = _check_confusion(confusion, k)
     names = check_class_names(class_names, k)
@@ -290,7 +290,7 @@ def acc_prior(
     >>> acc_prior(proba, confusion).prior.round(4)        # (0.3 - 0.1) / (0.8 - 0.1)
     array([0.7143, 0.2857])
     """
-    p, w = _check_target(proba, sample_weight)
+    p, w = _check_target(proba, sample_weight, owner="acc_prior")
     k = p.shape[1]
     c = _check_confusion(confusion, k)
     names = check_class_names(class_names, k)

@@ -14,6 +14,7 @@ import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 
 from .._validation import check_proba, check_sample_weight, plain
+from ..calibration._base import rescale_extreme_weights
 from ._adjust import check_prior
 from ._em_loop import accelerated_em
 
@@ -123,9 +124,16 @@ def kish_weights(w: np.ndarray) -> np.ndarray:
 
 
 # -- shared input handling ---------------------------------------------------------------------
-def _check_target(proba: Any, sample_weight: Any, name: str = "proba") -> tuple[np.ndarray, np.ndarray]:
+def _check_target(proba: Any, sample_weight: Any, name: str = "proba",
+                  owner: str | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Checked probabilities and weights; with ``owner`` (a statistic that does not change when
+    all weights are scaled), weights beyond about 1e+-77 are divided by a power of two with a
+    warning naming ``owner``, since their sums of squares overflow or underflow."""
     p = check_proba(proba, name=name, ndim=2)
     w = check_sample_weight(sample_weight, p.shape[0])
+    if owner is not None and sample_weight is not None:
+        w = rescale_extreme_weights(w, owner, "source_sample_weight" if name == "source_proba"
+                                    else "sample_weight", stacklevel=5)
     return p, w
 
 
@@ -411,7 +419,7 @@ def em_prior(
     >>> em_prior(proba, source_prior=[0.5, 0.5]).prior.round(3)
     array([0.5, 0.5])
     """
-    p, w = _check_target(proba, sample_weight)
+    p, w = _check_target(proba, sample_weight, owner="em_prior")
     k = p.shape[1]
     src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
     start = src if init is None else check_prior(init, k, name="init", strictly_positive=True)

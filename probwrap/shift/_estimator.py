@@ -14,6 +14,7 @@ import numpy as np
 from sklearn.utils import check_random_state
 
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
+from ..calibration._base import rescale_extreme_weights
 from ..calibration._logodds import proba_to_log_proba
 from ._analytic import analytic_prior_interval, labelled_parameter_cov
 from ._calibration import BiasCorrectedScaling, heldout_clip
@@ -218,6 +219,8 @@ class PriorEstimator(_Resampling):
         check_same_length(("proba", p), ("y", y))
         y_idx, _ = check_labels(y, name="y", classes=np.arange(k), min_classes=1)
         w = check_sample_weight(sample_weight, p.shape[0])
+        if sample_weight is not None:
+            w = rescale_extreme_weights(w, "PriorEstimator.fit", stacklevel=3)
         counts = np.bincount(y_idx, weights=w, minlength=k)
         if np.any(counts <= 0):
             raise ValueError(
@@ -426,6 +429,8 @@ class PriorEstimator(_Resampling):
                 f"{k} classes."
             )
         w = check_sample_weight(sample_weight, p_raw.shape[0])
+        if sample_weight is not None:
+            w = rescale_extreme_weights(w, "PriorEstimator.estimate", stacklevel=3)
         n_eff = float(effective_rows) if effective_rows else _kish(w)
         if n_eff < FEW_ROWS:
             warnings.warn(

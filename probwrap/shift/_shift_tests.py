@@ -89,7 +89,7 @@ def shift_test(
     >>> bool(res.pvalue < 1e-6)
     True
     """
-    p, w = _check_target(proba, sample_weight)
+    p, w = _check_target(proba, sample_weight, owner="shift_test")
     k = p.shape[1]
     src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
     wk = kish_weights(w)
@@ -405,13 +405,14 @@ def shift_score_test(
     >>> bool(res.pvalue < 1e-6)
     True
     """
-    p, w = _check_target(proba, sample_weight)
+    p, w = _check_target(proba, sample_weight, owner="shift_score_test")
     k = p.shape[1]
     src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
     mean, cov, n = _mean_cov(_score_rows(p, src), w)
     source = None
     if source_proba is not None:
-        ps, ws = _check_target(source_proba, source_sample_weight, name="source_proba")
+        ps, ws = _check_target(source_proba, source_sample_weight, name="source_proba",
+                               owner="shift_score_test")
         if ps.shape[1] != k:
             raise ValueError(f"`source_proba` has {ps.shape[1]} columns but `proba` has {k}.")
         ys = None
