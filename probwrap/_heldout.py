@@ -33,7 +33,7 @@ from sklearn.utils.metadata_routing import MetadataRouter, MethodMapping, proces
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import column_or_1d, has_fit_parameter
 
-from ._predictions import HeldOutPredictions
+from ._predictions import HeldOutPredictions, check_model_probabilities
 from ._predictions import resolve_response as _resolve_response
 from ._validation import (
     check_labels,
@@ -318,6 +318,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                 f"`estimator` returned NaN or infinite values from {response}; held-out "
                 "predictions must be finite."
             )
+        check_model_probabilities(values, response, "`estimator`", "held-out rows")
         self.estimator_ = estimator
         self.classes_ = np.asarray(classes)
         if hasattr(estimator, "n_features_in_"):
@@ -374,6 +375,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             raise ValueError(
                 f"The wrapped estimator returned NaN or infinite values from {response} for `X`."
             )
+        check_model_probabilities(out, response, "The wrapped estimator", "`X`")
         return out
 
     # -- scikit-learn protocol ---------------------------------------------------------------

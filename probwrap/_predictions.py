@@ -110,3 +110,18 @@ def resolve_response(estimator: Any, response: str) -> str:
     if response == "decision_function" and not has_decision:
         raise ValueError(f"`estimator` ({type(estimator).__name__}) has no decision_function.")
     return response
+
+
+def check_model_probabilities(values: np.ndarray, response: str, who: str, rows: str) -> None:
+    """Refuse ``predict_proba`` output outside [0, 1] (a model that is not probabilistic, or a
+    broken one), naming the range: the wrappers read it as probabilities (a cost rule would
+    return "probabilities" beyond 1, a calibration map would be fitted to nonsense)."""
+    if response != "predict_proba" or values.size == 0:
+        return
+    lo, hi = float(values.min()), float(values.max())
+    if lo < 0.0 or hi > 1.0:
+        raise ValueError(
+            f"{who} returned values from {lo:.6g} to {hi:.6g} from predict_proba for {rows}; "
+            "probabilities must lie in [0, 1]. Wrap a model whose predict_proba returns "
+            "probabilities (scores of any range belong in decision_function)."
+        )

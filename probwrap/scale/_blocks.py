@@ -15,6 +15,7 @@ from typing import Any
 
 import numpy as np
 
+from .._predictions import check_model_probabilities
 from ._tally import check_block_weights
 
 __all__ = [
@@ -106,6 +107,7 @@ def predict_block(estimator: Any, response: str, Xb: Any, width: int | None) -> 
             f"`estimator` returned NaN or infinite values from {response}; held-out "
             "predictions must be finite."
         )
+    check_model_probabilities(values, response, "`estimator`", "held-out rows")
     return values
 
 

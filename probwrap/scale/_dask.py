@@ -12,6 +12,7 @@ from typing import Any
 
 import numpy as np
 
+from .._predictions import check_model_probabilities
 from .._validation import plain
 from ._tally import (
     DEFAULT_RESOLUTION,
@@ -252,6 +253,7 @@ def _binary_scores(values: np.ndarray, response: str) -> np.ndarray:
             f"`estimator` returned NaN or infinite values from {response}; held-out predictions "
             "must be finite."
         )
+    check_model_probabilities(values, response, "`estimator`", "held-out rows")
     if response == "decision_function":
         return values.ravel() if values.ndim == 1 else values[:, -1] - values[:, 0]
     lp = np.log(np.maximum(values, np.nextafter(0.0, 1.0)))
