@@ -708,29 +708,16 @@ class GaussianSource:
         return np.column_stack([1 - p1, p1]), y
 
 
-class CancerSource:
-    """scikit-learn's breast-cancer data: class-wise resampling of held-back rows."""
+class PooledRows:
+    """Rows resampled by class from pools of a frozen model's probabilities (``self.pools``,
+    one array per class; ``self.rng``), so the class priors are known exactly."""
 
-    name = "breast_cancer"
-
-    def __init__(self, rng):
-        X, y = load_breast_cancer(return_X_y=True)
-        X = X[:, [1, 21]]  # mean texture, worst texture: a model of moderate strength
-        order = rng.permutation(y.shape[0])
-        train, rest = order[: y.shape[0] // 3], order[y.shape[0] // 3:]
-        model = LogisticRegression(max_iter=1000).fit(X[train], y[train])
-        proba = model.predict_proba(X[rest])
-        self.pools = [proba[y[rest] == c] for c in (0, 1)]
-        self.rng = rng
-
-    def draw(self, n, prevalence):
-        y = (self.rng.uniform(size=n) < prevalence).astype(int)
-        out = np.empty((n, 2))
-        for c in (0, 1):
+    def _resample(self, y):
+        out = np.empty((y.shape[0], len(self.pools)))
+        for c, pool in enumerate(self.pools):
             rows = y == c
-            pool = self.pools[c]
             out[rows] = pool[self.rng.integers(0, pool.shape[0], size=int(rows.sum()))]
-        return out, y
+        return out
 
     def limit_bias(self, src_prior, tgt_prior, calibration="bcts"):
         """Error of the maximum-likelihood prior with infinitely many labelled and unlabelled
@@ -748,6 +735,26 @@ class CancerSource:
             ml = est.estimate(proba, sample_weight=tgt_prior[y] / counts[y],
                               effective_rows=1e6, interval=False).ml_prior
         return ml - tgt_prior
+
+
+class CancerSource(PooledRows):
+    """scikit-learn's breast-cancer data: class-wise resampling of held-back rows."""
+
+    name = "breast_cancer"
+
+    def __init__(self, rng):
+        X, y = load_breast_cancer(return_X_y=True)
+        X = X[:, [1, 21]]  # mean texture, worst texture: a model of moderate strength
+        order = rng.permutation(y.shape[0])
+        train, rest = order[: y.shape[0] // 3], order[y.shape[0] // 3:]
+        model = LogisticRegression(max_iter=1000).fit(X[train], y[train])
+        proba = model.predict_proba(X[rest])
+        self.pools = [proba[y[rest] == c] for c in (0, 1)]
+        self.rng = rng
+
+    def draw(self, n, prevalence):
+        y = (self.rng.uniform(size=n) < prevalence).astype(int)
+        return self._resample(y), y
 
 
 def coverage(quick: bool) -> None:
@@ -875,7 +882,7 @@ class ThreeGaussianSource:
         return self.model.predict_proba(X), y
 
 
-class WineSource:
+class WineSource(PooledRows):
     """scikit-learn's wine data (three cultivars): a logistic regression on two features
     trained on a third of the rows; labelled and unlabelled rows resampled by class from the
     other rows, so the class priors are known exactly."""
@@ -896,29 +903,7 @@ class WineSource:
 
     def draw(self, n, prior):
         y = self.rng.choice(3, size=n, p=prior)
-        out = np.empty((n, 3))
-        for c in range(3):
-            rows = y == c
-            pool = self.pools[c]
-            out[rows] = pool[self.rng.integers(0, pool.shape[0], size=int(rows.sum()))]
-        return out, y
-
-    def limit_bias(self, src_prior, tgt_prior, calibration="bcts"):
-        """Error of the maximum-likelihood prior with infinitely many labelled and unlabelled
-        rows drawn from the pool: every pool row once, weighted to the class shares exactly
-        (labelled to ``src_prior``, unlabelled to ``tgt_prior``). Non-zero only where the
-        calibration map cannot reach the pool's own class probabilities given the model's
-        posteriors (misspecification), so it separates that from finite-sample bias."""
-        proba = np.vstack(self.pools)
-        y = np.concatenate([np.full(len(p), c) for c, p in enumerate(self.pools)])
-        counts = np.array([len(p) for p in self.pools], dtype=float)
-        est = PriorEstimator(calibration=calibration).fit(
-            proba, y, sample_weight=src_prior[y] / counts[y], effective_rows=1e6)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            ml = est.estimate(proba, sample_weight=tgt_prior[y] / counts[y],
-                              effective_rows=1e6, interval=False).ml_prior
-        return ml - tgt_prior
+        return self._resample(y), y
 
 
 def _share_draws(source, n_lab, n_unl, src_prior, tgt_prior, reps):
