@@ -62,6 +62,24 @@ _WEIGHT_LOW = 2.0**-256
 _WEIGHT_HIGH = 2.0**256
 
 
+def weight_unit_of(largest: float) -> float:
+    """The power of two extreme weights are divided by, from the largest weight of some rows:
+    1.0 when it lies in about [1e-77, 1e77] (or is 0), else ``2**floor(log2(largest))``.
+
+    Applied block by block and aligned at merges (the larger unit of two blocks with weight
+    wins), it gives the unit of the largest weight of all rows, as in memory.
+
+    Examples
+    --------
+    >>> weight_unit_of(3.0), weight_unit_of(2.0**1000 * 1.5) == 2.0**1000
+    (1.0, True)
+    """
+    top = float(largest)
+    if not top > 0.0 or _WEIGHT_LOW <= top <= _WEIGHT_HIGH or not math.isfinite(top):
+        return 1.0
+    return power_of_two_unit(np.array([top]))
+
+
 def rescale_extreme_weights(
     sw: np.ndarray, owner: str, name: str = "sample_weight", stacklevel: int = 4
 ) -> np.ndarray:
@@ -84,9 +102,9 @@ def rescale_extreme_weights(
     [0.5, 1.0]
     """
     top = float(sw.max()) if sw.size else 1.0
-    if top <= 0.0 or _WEIGHT_LOW <= top <= _WEIGHT_HIGH:
+    unit = weight_unit_of(top)
+    if unit == 1.0:
         return sw
-    unit = power_of_two_unit(sw)
     out = sw / unit
     warnings.warn(
         f"{owner}: `{name}` reaches {top:.3g}; weights this far from 1 overflow or underflow "

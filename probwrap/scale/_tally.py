@@ -24,7 +24,8 @@ from typing import Any
 import numpy as np
 from scipy.special import expit
 
-from .._validation import check_same_length, check_scores, plain, power_of_two_unit
+from .._validation import check_same_length, check_scores, plain
+from ..calibration._base import weight_unit_of
 
 __all__ = ["DEFAULT_RESOLUTION", "ScoreTally", "merge_tallies", "warn_weight_unit", "weight_unit_of"]
 
@@ -35,31 +36,6 @@ DEFAULT_RESOLUTION = 1e-3
 
 # Largest |score / resolution| that still fits comfortably into int64 bin indices.
 _MAX_INDEX = 2.0**62
-
-# Weights whose largest entry lies outside [2**-256, 2**256] (about 1e-77 to 1e77) are tallied
-# divided by a power of two, as the wrappers rescale in-memory weights
-# (probwrap._heldout.rescale_extreme_weights): sums of their squares would overflow or underflow.
-_WEIGHT_LOW = 2.0**-256
-_WEIGHT_HIGH = 2.0**256
-
-
-def weight_unit_of(largest: float) -> float:
-    """The power of two extreme weights are divided by, from the largest weight of some rows:
-    1.0 when it lies in about [1e-77, 1e77] (or is 0), else ``2**floor(log2(largest))``.
-
-    Applied block by block and aligned at merges (the larger unit of two blocks with weight
-    wins), it gives the unit of the largest weight of all rows, as in memory.
-
-    Examples
-    --------
-    >>> weight_unit_of(3.0), weight_unit_of(2.0**1000 * 1.5) == 2.0**1000
-    (1.0, True)
-    """
-    top = float(largest)
-    if not top > 0.0 or _WEIGHT_LOW <= top <= _WEIGHT_HIGH or not math.isfinite(top):
-        return 1.0
-    return power_of_two_unit(np.array([top]))
-
 
 def _exponent(unit: float) -> int:
     return math.frexp(unit)[1] - 1
