@@ -254,7 +254,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         if self.method == "auto":
             self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
         else:
-            self._warn_few_class_rows(*ho.counted_rows(w))
+            self._warn_few_class_rows(ho.class_row_counts(w))
             # a method the user named that cannot be fitted raises, naming the method
             try:
                 self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
@@ -286,12 +286,11 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
                 )
         return self
 
-    def _warn_few_class_rows(self, y_index: np.ndarray, w: np.ndarray) -> None:
+    def _warn_few_class_rows(self, counts: np.ndarray) -> None:
         """Warn, naming each class and its count, when a class has at least one but fewer than
-        ``FEW_CLASS_ROWS`` held-out rows of weight > 0 (rows, not weights: the scale of the
-        weights cannot change the warning). Absent classes have a warning of their own."""
-        counts = np.bincount(np.asarray(y_index, dtype=np.intp)[np.asarray(w) > 0],
-                             minlength=len(self.classes_))
+        ``FEW_CLASS_ROWS`` held-out rows of weight > 0 (``counts``, per class: rows, not
+        weights, so the scale of the weights cannot change the warning). Absent classes have a
+        warning of their own."""
         few = np.flatnonzero((counts > 0) & (counts < FEW_CLASS_ROWS))
         if few.size:
             listed = ", ".join(

@@ -13,7 +13,7 @@ import numpy as np
 
 from ._validation import plain
 
-__all__ = ["HeldOutPredictions", "resolve_response", "rows_standing_in"]
+__all__ = ["HeldOutPredictions", "check_model_probabilities", "resolve_response"]
 
 _RESPONSES = ("predict_proba", "decision_function", "auto")
 
@@ -59,32 +59,13 @@ class HeldOutPredictions:
     #: With ``from_tally``: the number of original rows of positive weight of each class.
     weighted_class_rows: np.ndarray | None = None
 
-    def counted_rows(self, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """``(y_index, w)`` for the wrappers' count of rows of positive weight per class: these
-        rows, or for tally rows stand-ins for the original rows (see ``rows_standing_in``)."""
+    def class_row_counts(self, w: np.ndarray) -> np.ndarray:
+        """Rows of positive weight per class (rows, not weights: the scale of the weights
+        cannot change a count); for tally rows the original rows' counts."""
         if self.from_tally and self.weighted_class_rows is not None:
-            return rows_standing_in(self.weighted_class_rows)
-        return self.y_index, w
-
-
-#: More rows per class than any wrapper's "few rows of a class" limit (5).
-_STAND_IN_CAP = 1000
-
-
-def rows_standing_in(weighted_class_rows: Any) -> tuple[np.ndarray, np.ndarray]:
-    """Labels and unit weights standing in for the rows of positive weight of each class when
-    the rows themselves were tallied or summed where they live (Dask, Spark): at most 1,000 per
-    class, so counts below the wrappers' limit of a few rows come out exact.
-
-    Examples
-    --------
-    >>> y, w = rows_standing_in([2, 0, 3])
-    >>> y.tolist(), w.tolist()
-    ([0, 0, 2, 2, 2], [1.0, 1.0, 1.0, 1.0, 1.0])
-    """
-    counts = np.minimum(np.asarray(weighted_class_rows, dtype=np.int64), _STAND_IN_CAP)
-    y = np.repeat(np.arange(counts.shape[0]), counts)
-    return y, np.ones(y.shape[0])
+            return np.asarray(self.weighted_class_rows, dtype=np.int64)
+        return np.bincount(np.asarray(self.y_index, dtype=np.intp)[np.asarray(w) > 0],
+                           minlength=len(self.classes))
 
 
 def resolve_response(estimator: Any, response: str) -> str:

@@ -383,7 +383,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             self._source_tally = None
             return self._finish_fit(est)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
-        self._warn_few_class_rows(*ho.counted_rows(ho.sample_weight))
+        self._warn_few_class_rows(ho.class_row_counts(ho.sample_weight))
         est = PriorEstimator(
             self.method,
             calibration=self.calibration,
@@ -409,17 +409,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             est._drop_source_for_analytic()
         return self._finish_fit(est)
 
-    def _warn_few_class_rows(self, y_index: np.ndarray, w: np.ndarray) -> None:
+    def _warn_few_class_rows(self, counts: np.ndarray) -> None:
         """Warn, naming the class(es), when a class has fewer than ``MIN_CLASS_ROWS`` labelled
-        rows of weight > 0 (rows, not weights: the scale of the weights does not matter).
+        rows of weight > 0 (``counts``, per class: rows, not weights, so the scale of the
+        weights does not matter).
 
         ``source_prior_``, the calibration's bias for that class and the chi-square
         approximation of its identity test then rest on a handful of rows; 5 is the common-
         practice minimum count for a chi-square approximation (Cochran 1954).
         """
-        counts = np.bincount(np.asarray(y_index, dtype=np.intp)[np.asarray(w) > 0],
-                             minlength=len(self.classes_))
-        few = np.flatnonzero(counts < MIN_CLASS_ROWS)
+        few = np.flatnonzero(np.asarray(counts) < MIN_CLASS_ROWS)
         if few.size:
             listed = ", ".join(f"{plain(self.classes_[c])!r}: {int(counts[c])}" for c in few)
             warnings.warn(

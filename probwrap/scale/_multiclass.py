@@ -145,7 +145,6 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     Sets ``estimator_``, ``classes_`` (and feature attributes) on ``owner``; returns the
     estimator, whose ``n_resamples`` is 0 (no bootstrap for multiclass Dask input).
     """
-    from .._predictions import rows_standing_in
     from ..calibration._logodds import clip_from_smallest
     from ..shift import PriorEstimator
     from ..shift._calibration import (
@@ -181,7 +180,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
                 "held-out rows to estimate its prior."
             )
         owner.classes_ = classes  # (set again below) for the warning about classes of few rows
-        owner._warn_few_class_rows(*rows_standing_in(weighted))
+        owner._warn_few_class_rows(np.asarray(weighted, dtype=np.int64))
         est = PriorEstimator(
             owner.method, calibration=owner.calibration, tol=owner.em_tol,
             max_iter=owner.em_max_iter, n_resamples=0,

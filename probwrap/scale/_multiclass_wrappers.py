@@ -113,7 +113,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     from scipy.optimize import brentq
     from sklearn.base import clone
 
-    from .._predictions import resolve_response, rows_standing_in
+    from .._predictions import resolve_response
     from ..calibration._base import WeightScaleWarning, one_vs_rest_copy
     from ..calibration._temperature import (
         _LOG_SPAN,
@@ -153,7 +153,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
             rows, weighted = terms[4 : 4 + k], terms[4 + k :]
             check_class_rows(owner, classes, rows, weighted)
             warn_weight_unit(unit, type(owner).__name__, total, stacklevel=6)
-            owner._warn_few_class_rows(*rows_standing_in(weighted))
+            owner._warn_few_class_rows(np.asarray(weighted, dtype=np.int64))
             cal = clone(template)
             cal.classes_ = np.arange(k)
             cal.n_classes_ = k
@@ -230,7 +230,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     # class j's tally has the rows of class j as its label 1
     weighted = np.array([t.weighted_rows_by_label[1] for t in merged])
     check_class_rows(owner, classes, np.array([t.rows_by_label[1] for t in merged]), weighted)
-    owner._warn_few_class_rows(*rows_standing_in(weighted))
+    owner._warn_few_class_rows(np.asarray(weighted, dtype=np.int64))
     total = merged[0].total_weight
     # every class's tally holds the same rows and weights, so the same weight unit
     warn_weight_unit(merged[0].weight_unit, type(owner).__name__, total, stacklevel=6)
