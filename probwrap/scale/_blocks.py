@@ -28,6 +28,31 @@ __all__ = [
 ]
 
 
+def _block_labels(yb: Any) -> np.ndarray:
+    """One block's labels as a NumPy array. A pandas nullable column (``Int64``, ``boolean``,
+    ``Float64``) becomes its NumPy dtype (before pandas 2.2 ``to_numpy`` gave an object array,
+    which the label check refuses as numbers in an object array), and a categorical column its
+    categories' type; with missing values a
+    numeric one becomes floats with NaN, so the missing labels are named as in memory."""
+    if hasattr(yb, "cat") and hasattr(yb.cat, "codes"):  # categorical: its categories' type
+        import pandas as pd
+
+        cats = _block_labels(pd.Series(yb.cat.categories))
+        codes = np.asarray(yb.cat.codes)
+        if (codes >= 0).all():
+            return cats[codes]
+        if cats.dtype.kind in "iufb":
+            return np.where(codes >= 0, cats[np.maximum(codes, 0)].astype(float), np.nan)
+        return np.where(codes >= 0, cats[np.maximum(codes, 0)].astype(object), None)
+    numpy_dtype = getattr(getattr(yb, "dtype", None), "numpy_dtype", None)
+    if numpy_dtype is not None and hasattr(yb, "isna") and hasattr(yb, "to_numpy"):
+        if not bool(np.asarray(yb.isna()).any()):
+            return yb.to_numpy(dtype=numpy_dtype)
+        if numpy_dtype.kind in "iuf":
+            return yb.to_numpy(dtype=float, na_value=np.nan)
+    return yb.to_numpy() if hasattr(yb, "to_numpy") else np.asarray(yb)
+
+
 def block_label_index(classes: np.ndarray, yb: Any, name: str = "y") -> np.ndarray:
     """Indices in the sorted ``classes`` of one block's labels, refused as in memory.
 
@@ -37,7 +62,7 @@ def block_label_index(classes: np.ndarray, yb: Any, name: str = "y") -> np.ndarr
     """
     from .._validation import check_target_labels
 
-    y = yb.to_numpy() if hasattr(yb, "to_numpy") else np.asarray(yb)
+    y = _block_labels(yb)
     if y.ndim == 2 and y.shape[1] == 1:
         y = y[:, 0]
     y = y.ravel()
