@@ -461,7 +461,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
     cov = suu / total - np.outer(mean, mean)
     source_score = getattr(est, "_source_score", None)
     test = _score_stat_moments((mean, cov, n_eff), _current_source_score(source_score), k,
-                                pooled=True)
+                                pooled=True, source_prior=src)
     stat, pvalue = test.statistic, test.pvalue
     # the same harm scale as in memory (for the max_harm cutoff): from the same sums
     loss = entropy / total

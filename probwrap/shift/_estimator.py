@@ -453,7 +453,7 @@ class PriorEstimator(_Resampling):
         m_t, c_t, _ = _mean_cov(_score_rows(p, src), w)
         source_score = getattr(self, "_source_score", None)
         test = _score_stat_moments((m_t, c_t, n_eff), _current_source_score(source_score), k,
-                                    pooled=True)
+                                    pooled=True, source_prior=src)
         stat, pvalue = test.statistic, test.pvalue
         harm_scale = null_harm_scale(p, w, src, test.mean_cov,
                                      reference_loss=getattr(self, "_source_log_loss", None))
