@@ -250,8 +250,9 @@ def _nan(y):
 
 
 LABEL_CASES = {
-    # a block holding only the numbers of the mixed labels says so (whichever block is first)
-    "numbers mixed with text": (_mixed, "mixes label types|numbers in an object array"),
+    # whichever block fails first, the message names the mixing (a block holding only the
+    # numbers of the mixed labels says they may mix with text in other blocks)
+    "numbers mixed with text": (_mixed, "mixes label types"),
     "NaN label": (_nan, r"1 NaN label\(s\) \(first at row 7"),
     "None label": (None, r"1 missing label\(s\) \(None or NaN; first at row 9"),
     "numbers in an object array": (lambda y: y.astype(object), "numbers in an object array"),

@@ -72,6 +72,11 @@ def block_label_index(classes: np.ndarray, yb: Any, name: str = "y") -> np.ndarr
         # a row number within the block (Dask block or Spark partition)
         message = re.sub(r"first at row (\d+)\)", r"first at row \1 of its block of rows)",
                          str(exc))
+        if "numbers in an object array" in message:
+            # an object column is often one whose other blocks hold text: which message a user
+            # meets would otherwise depend on which block fails first
+            message += (" If other blocks of rows hold text labels, the column mixes label "
+                        "types: labels must be all numbers or all text.")
         raise ValueError(message) from None
     if y.size == 0:
         return np.zeros(0, dtype=np.int64)
