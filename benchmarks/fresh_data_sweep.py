@@ -212,9 +212,11 @@ class _Reordered:
         return {"model": self.model, "order": self.order}
 
 
-def user_checks(quick: bool) -> None:
+def user_checks(quick: bool, sets=None) -> None:
     """Pandas inputs, string labels, weights, unsorted classes, and the cost rules beside
-    scikit-learn's threshold classifiers; counts what goes wrong (see the module docstring)."""
+    scikit-learn's threshold classifiers; counts what goes wrong (see the module docstring).
+    ``sets``: a generator of data sets called as ``sets(quick, labels=True)`` (default
+    :func:`fresh_data_sets`; ``wide_data_sweep.py`` passes its own)."""
     import pandas as pd
     from sklearn.frozen import FrozenEstimator
     from sklearn.linear_model import LogisticRegression
@@ -224,7 +226,7 @@ def user_checks(quick: bool) -> None:
     from sklearn.preprocessing import StandardScaler
 
     cost_ratio = collections.defaultdict(list)
-    for name, X, y_lab in fresh_data_sets(quick, labels=True):
+    for name, X, y_lab in (sets or fresh_data_sets)(quick, labels=True):
         rng = np.random.default_rng(0)
         n = len(y_lab)
         idx = rng.permutation(n)

