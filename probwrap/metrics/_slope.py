@@ -53,28 +53,42 @@ def _newton_logistic(
 ) -> tuple[np.ndarray, int]:
     """Weighted logistic regression of y on [1, x] (or on 1 with offset x) by damped Newton.
 
-    A step that does not raise the likelihood even when halved to 1e-10 of its length (or is
-    not finite: a flat curvature where every forecast is at 0 or 1) is not taken; the fit
+    The slope fit works on ``x`` centred and scaled by its weighted mean and standard deviation
+    and starts at the intercept-only fit (slope 0, every row at the weighted event rate), where
+    the curvature is that of the event rate on every row; the result is mapped back to ``x``.
+    (Started at the forecasts themselves, ``a = 0, b = 1``, forecasts piled at 0 and 1 have a
+    curvature of about 1e-12: the first steps overshoot until the curvature underflows, and the
+    fit stopped at a wrong slope or on a singular matrix.) A step that does not raise the
+    likelihood even when halved to 1e-10 of its length (or is not finite) is not taken; the fit
     stops where it is. The offset-only fit is one-dimensional and solved by bracketing.
     """
     if not fit_slope:
         return _intercept_with_offset(x, y, w)
-    beta = np.array([0.0, 1.0])
-    design = np.column_stack((np.ones_like(x), x))
+    centre = float(np.dot(w, x) / w.sum())
+    spread = float(np.sqrt(np.dot(w, (x - centre) ** 2) / w.sum()))
+    spread = spread if spread > 0.0 else 1.0
+    u = (x - centre) / spread
+    rate = float(np.dot(w, y) / w.sum())
+    beta = np.array([np.log(rate) - np.log1p(-rate), 0.0])
+    design = np.column_stack((np.ones_like(u), u))
     eta = design @ beta
     ll = _loglik(eta, y, w)
+
+    def on_x(b: np.ndarray) -> np.ndarray:
+        return np.array([b[0] - b[1] * centre / spread, b[1] / spread])
+
     for it in range(1, max_iter + 1):
         mu = expit(eta)
         resid = w * (y - mu)
         curv = w * mu * (1.0 - mu)
-        if fit_slope:
-            grad = design.T @ resid
-            hess = (design * curv[:, None]).T @ design
+        grad = design.T @ resid
+        hess = (design * curv[:, None]).T @ design
+        try:
             step = np.linalg.solve(hess, grad)
-        else:
-            step = np.array([resid.sum() / curv.sum(), 0.0])
+        except np.linalg.LinAlgError:  # curvature underflowed on every row: no Newton step
+            return on_x(beta), it
         if not np.all(np.isfinite(step)):
-            return beta, it
+            return on_x(beta), it
         scale = 1.0
         while True:
             cand = beta + scale * step
@@ -83,18 +97,18 @@ def _newton_logistic(
             if ll_c >= ll - 1e-12 * (1.0 + abs(ll)):
                 break
             if scale < 1e-10:  # no step raises the likelihood: at the optimum to rounding
-                return beta, it
+                return on_x(beta), it
             scale *= 0.5
         beta, eta, ll = cand, eta_c, ll_c
         if np.max(np.abs(scale * step)) <= tol * (1.0 + np.max(np.abs(beta))):
-            return beta, it
+            return on_x(beta), it
     warnings.warn(
         f"Newton's method did not reach tolerance {tol:g} within {max_iter} iterations; the "
         "calibration slope/intercept may be inaccurate.",
         ConvergenceWarning,
         stacklevel=3,
     )
-    return beta, max_iter
+    return on_x(beta), max_iter
 
 
 def _intercept_with_offset(x: np.ndarray, y: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, int]:
