@@ -914,7 +914,7 @@ def _share_draws(source, n_lab, n_unl, src_prior, tgt_prior, reps):
     draw. Draws of two calls with more repetitions add up (:func:`_merge_draws`)."""
     from probwrap.shift._analytic import (
         SHARE_INTERVAL_SHAPE,
-        analytic_prior_interval,
+        analytic_prior_cov,
         share_interval,
     )
     from probwrap.shift._resample import _widen
@@ -933,11 +933,13 @@ def _share_draws(source, n_lab, n_unl, src_prior, tgt_prior, reps):
             res = est.estimate(p_t)
         ml = res.ml_prior
         out["ml"].append(ml)
-        cov = analytic_prior_interval(est.calibrator_, p_t, np.ones(n_unl), float(n_unl),
-                                      est.source_prior_, ml, est._eta_cov(), 0.95)[1]
+        cov, df = analytic_prior_cov(est.calibrator_, p_t, np.ones(n_unl), float(n_unl),
+                                     est.source_prior_, ml, est._eta_cov(),
+                                     est.n_source_effective_)
         for shape in shapes:
             for level in (0.90, 0.95):
-                b = _widen(share_interval(ml, cov, level, shape), ml, ml, float(n_unl), level)
+                b = _widen(share_interval(ml, cov, level, shape, df), ml, ml, float(n_unl),
+                           level)
                 if level == 0.95 and shape == SHARE_INTERVAL_SHAPE:
                     assert np.allclose(b, res.ml_interval, rtol=0, atol=1e-9)
                 lo, hi = b.T
@@ -1162,9 +1164,143 @@ def multiclass_coverage(quick: bool, reps: int | None = None, grid_only: bool = 
           f"(keep_heldout=True: {sizes_kb[1]:.0f} kB)\n")
 
 
+# -- 7. few labelled rows ----------------------------------------------------------------------
+#: Class priors of the few-labelled-rows part: (source, no-shift target, shifted target).
+FEW_PRIORS = {
+    2: (np.array([0.7, 0.3]), np.array([0.7, 0.3]), np.array([0.85, 0.15])),
+    3: (np.array([0.5, 0.3, 0.2]), np.array([0.5, 0.3, 0.2]), np.array([0.3, 0.5, 0.2])),
+}
+
+
+def _binary(draw):
+    """A two-class source's ``draw(n, prevalence)`` as ``draw(n, prior)`` (prior of shape 2)."""
+    return lambda n, prior: draw(n, float(prior[1]))
+
+
+def _labelled_draw(source, n, prior, k):
+    """Labelled rows with every class present (a fit needs rows of each class): redrawn until
+    they are; returns the rows and how many draws were refused."""
+    for refused in range(1000):
+        p, y = source.draw(n, prior)
+        if np.unique(y).shape[0] == k:
+            return p, y, refused
+    raise RuntimeError("could not draw labelled rows with every class")
+
+
+def _few_cell(source, k, n_lab, n_unl, src_prior, tgt_prior, reps, interval="score",
+              n_resamples=200):
+    """One cell of the few-labelled-rows part: per repetition, the default interval of every
+    class share at 90 % and 95 % (``ml_interval``, the confidence interval around the
+    maximum-likelihood estimate, and ``interval``, the one the wrapper reports as
+    ``target_prior_interval_``, widened to contain the shrunk estimate), its width, and the
+    maximum-likelihood estimate."""
+    out = {"hit90": [], "hit95": [], "rep95": [], "width95": [], "ml": [], "refused": 0}
+    for _ in range(reps):
+        p_s, y_s, refused = _labelled_draw(source, n_lab, src_prior, k)
+        out["refused"] += refused
+        p_t, _ = source.draw(n_unl, tgt_prior)
+        est = PriorEstimator(random_state=0, interval=interval, n_resamples=n_resamples)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            est.fit(p_s, y_s)
+            for level in (0.90, 0.95):
+                est.confidence_level = level
+                res = est.estimate(p_t)
+                lo, hi = res.ml_interval.T
+                out[f"hit{round(level * 100)}"].append((lo <= tgt_prior) & (tgt_prior <= hi))
+                if level == 0.95:
+                    out["width95"].append(hi - lo)
+                    lo_r, hi_r = res.interval.T
+                    out["rep95"].append((lo_r <= tgt_prior) & (tgt_prior <= hi_r))
+        out["ml"].append(res.ml_prior)
+    return {key: (np.asarray(v) if key != "refused" else v) for key, v in out.items()}
+
+
+def _few_summary(cell, tgt_prior, k):
+    """Per cell, of the shares that are free (share 1 for two classes, all three for three):
+    worst coverage at 90 % and 95 %, the reported interval's at 95 %, the mean implied standard
+    error (95 % width / 3.92) over the spread of the estimate, and the largest |bias| / spread."""
+    shares = [1] if k == 2 else list(range(k))
+    ml = cell["ml"][:, shares]
+    sd = np.std(ml, 0, ddof=1)
+    c90 = cell["hit90"].mean(0)[shares]
+    c95 = cell["hit95"].mean(0)[shares]
+    r95 = cell["rep95"].mean(0)[shares]
+    ratio = np.mean(cell["width95"].mean(0)[shares] / (2 * 1.959964) / sd)
+    bias = np.abs(ml.mean(0) - tgt_prior[shares]) / sd
+    return {"c90": float(c90.min()), "c95": float(c95.min()), "r95": float(r95.min()),
+            "ratio": float(ratio), "bias": float(bias.max()),
+            "width": float(cell["width95"].mean(0)[shares].mean())}
+
+
+def few_labels(quick: bool, reps: int | None = None) -> None:
+    """Coverage of the default interval with 30-250 labelled rows (the grid of part 2 and 5
+    starts at 500): two and three classes, Gaussian and resampled bundled data, no shift and a
+    shift; then the BCa bootstrap in the smallest cells."""
+    reps = int(reps) if reps else (60 if quick else 500)
+    n_labs = (30, 120) if quick else (30, 60, 120, 250)
+    n_unls = (300, 2000)
+    print(f"7. Few labelled rows: coverage of the default interval (ml_interval; worst share), "
+          f"{reps} repetitions per cell; sd ratio: implied se (95 % width / 3.92) over the "
+          f"spread of the maximum-likelihood estimate; bias/sd: largest |bias| over spread; "
+          f"rep95: coverage of target_prior_interval_ (widened to contain the shrunk estimate)")
+    head = (f"{'data':>14} {'shift':>5} {'n_lab':>6} {'n_unl':>6} | {'cov90':>6} {'cov95':>6} "
+            f"{'rep95':>6} {'width95':>8} {'sd ratio':>8} {'bias/sd':>7} | {'short':>6}")
+    print(head)
+    print("-" * len(head))
+    rng = np.random.default_rng(11)
+    short = []
+    t0 = time.perf_counter()
+    sources = ((2, GaussianSource(rng)), (2, CancerSource(rng)),
+               (3, ThreeGaussianSource(rng)), (3, WineSource(rng)))
+    for k, source in sources:
+        if k == 2:
+            source.draw = _binary(source.draw)
+        src_prior, same, shifted = FEW_PRIORS[k]
+        for label, tgt_prior in (("no", same), ("yes", shifted)):
+            for n_lab in n_labs:
+                for n_unl in n_unls:
+                    cell = _few_cell(source, k, n_lab, n_unl, src_prior, tgt_prior, reps)
+                    s = _few_summary(cell, tgt_prior, k)
+                    gap = max(0.90 - s["c90"], 0.95 - s["c95"])
+                    flag = "SHORT" if gap > 0.02 + 1e-9 else ""
+                    if flag:
+                        short.append((source.name, label, n_lab, n_unl, gap))
+                    print(f"{source.name:>14} {label:>5} {n_lab:6d} {n_unl:6d} | "
+                          f"{s['c90']:6.1%} {s['c95']:6.1%} {s['r95']:6.1%} {s['width']:8.4f} "
+                          f"{s['ratio']:8.2f} {s['bias']:7.2f} | {flag:>6}"
+                          + (f" (labelled draws refused: {cell['refused']})"
+                             if cell["refused"] else ""))
+    n_cells = 2 * 2 * len(n_labs) * len(n_unls) * 2
+    print(f"cells more than 2 points short of nominal (worst share, either level): {len(short)} "
+          f"of {n_cells} ({time.perf_counter() - t0:.0f} s; binomial sd of a coverage over "
+          f"{reps} repetitions: {np.sqrt(0.9 * 0.1 / reps):.1%} at 90 %, "
+          f"{np.sqrt(0.95 * 0.05 / reps):.1%} at 95 %)\n")
+
+    reps_b = 40 if quick else 200
+    print(f"   BCa bootstrap (interval='bca', n_resamples=200), shifted target, {reps_b} "
+          "repetitions, beside the default on the same draws' kind")
+    print(f"{'data':>14} {'n_lab':>6} {'n_unl':>6} {'interval':>8} | {'cov90':>6} {'cov95':>6} "
+          f"{'width95':>8} {'sd ratio':>8}")
+    rng_b = np.random.default_rng(12)
+    for k, source in ((2, GaussianSource(rng_b)), (3, ThreeGaussianSource(rng_b))):
+        if k == 2:
+            source.draw = _binary(source.draw)
+        src_prior, _, shifted = FEW_PRIORS[k]
+        for n_lab in ((30, 120) if not quick else (30,)):
+            n_unl = 2000
+            for interval in ("score", "bca"):
+                cell = _few_cell(source, k, n_lab, n_unl, src_prior, shifted, reps_b, interval)
+                s = _few_summary(cell, shifted, k)
+                print(f"{source.name:>14} {n_lab:6d} {n_unl:6d} {interval:>8} | "
+                      f"{s['c90']:6.1%} {s['c95']:6.1%} {s['width']:8.4f} {s['ratio']:8.2f}")
+    print()
+
+
 def main(quick: bool = False,
          seed: int = 0,
-         parts: tuple[str, ...] = ("evidence", "coverage", "speed", "small", "multiclass", "tiny"),
+         parts: tuple[str, ...] = ("evidence", "coverage", "speed", "small", "multiclass", "tiny",
+                                   "fewlabels"),
          reps: int | None = None, grid_only: bool = False,
          ) -> None:
     import os
@@ -1185,6 +1321,8 @@ def main(quick: bool = False,
         multiclass_coverage(quick, reps, grid_only)
     if "tiny" in parts:
         tiny_labelled(quick)
+    if "fewlabels" in parts:
+        few_labels(quick, reps)
     print(f"\n(total {time.perf_counter() - t0:.0f} s)")
 
 
@@ -1195,5 +1333,6 @@ if __name__ == "__main__":
     seeds = [int(a[len("--seed="):]) for a in sys.argv if a.startswith("--seed=")]
     reps_arg = [int(a[len("--reps="):]) for a in sys.argv if a.startswith("--reps=")]
     main(quick="--quick" in sys.argv, seed=seeds[0] if seeds else 0,
-         parts=chosen or ("evidence", "coverage", "speed", "small", "multiclass", "tiny"),
+         parts=chosen or ("evidence", "coverage", "speed", "small", "multiclass", "tiny",
+                          "fewlabels"),
          reps=reps_arg[0] if reps_arg else None, grid_only="--grid-only" in sys.argv)

@@ -263,3 +263,103 @@ def test_wilson_share_interval_is_statsmodels_wilson_on_the_implied_row_count():
     assert wil[0, 1] < lgt[0, 1] and wil[0, 1] - wil[0, 0] < lgt[0, 1] - lgt[0, 0]
     with pytest.raises(ValueError, match="`shape` must be"):
         share_interval(pi, cov, 0.9, "profile")
+
+
+# -- the small-sample step (few labelled rows) --------------------------------------------------
+def test_satterthwaite_df_is_welchs_df_of_scipy():
+    # Reference: scipy.stats.ttest_ind(..., equal_var=False).df — Welch's (1947) test, whose
+    # degrees of freedom are Satterthwaite's (1946) for the two parts s_i^2 / n_i with n_i - 1
+    # degrees of freedom each; the same closed form, so 1e-12.
+    from scipy.stats import ttest_ind
+
+    from probwrap.shift._analytic import satterthwaite_df
+
+    rng = np.random.default_rng(11)
+    a, b = rng.normal(size=12), 3.0 * rng.normal(size=40)
+    parts = (np.var(a, ddof=1) / 12, np.var(b, ddof=1) / 40)
+    ref = ttest_ind(a, b, equal_var=False).df
+    np.testing.assert_allclose(satterthwaite_df(parts, (11, 39)), ref, rtol=1e-12)
+    # elementwise over shares; every part 0: no spread to count, infinitely many
+    out = satterthwaite_df((np.array([parts[0], 0.0]), np.array([parts[1], 0.0])), (11, 39))
+    np.testing.assert_allclose(out[0], ref, rtol=1e-12)
+    assert out[1] == np.inf
+
+
+def test_labelled_dof_is_the_hc1_factor_of_statsmodels_least_squares():
+    # Reference: statsmodels' OLS with cov_type="HC1" against "HC0": the degrees-of-freedom
+    # correction n / (n - p) of MacKinnon & White (1985) for p fitted parameters, which the
+    # interval applies to the labelled rows' part with p the parameters fitted to them.
+    import statsmodels.api as sm
+
+    from probwrap.shift._analytic import labelled_dof
+
+    rng = np.random.default_rng(12)
+    n, p = 30, 5
+    X = sm.add_constant(rng.normal(size=(n, p - 1)))
+    y = X @ rng.normal(size=p) + rng.standard_t(3, size=n)
+    hc0 = sm.OLS(y, X).fit(cov_type="HC0").cov_params()
+    hc1 = sm.OLS(y, X).fit(cov_type="HC1").cov_params()
+    np.testing.assert_allclose(hc1, hc0 * n / labelled_dof(n, p), rtol=1e-12)
+    assert labelled_dof(None, p) is None and labelled_dof(3.0, p) == 1.0
+
+
+def test_share_interval_with_df_is_statsmodels_wilson_on_the_df_adjusted_row_count():
+    # Reference: statsmodels' proportion_confint(method="wilson") on Korn & Graubard's (1998)
+    # degrees-of-freedom-adjusted effective row count n (z / t_df)^2 (z, t_df the normal and
+    # Student quantiles from SciPy): Wilson's interval with Student's quantile in place of the
+    # normal one. Closed forms, so 1e-12. An infinite df is the normal interval.
+    from scipy.stats import norm
+    from scipy.stats import t as student_t
+    from statsmodels.stats.proportion import proportion_confint
+
+    from probwrap.shift._analytic import share_interval
+
+    pi = np.array([0.05, 0.35, 0.6])
+    se = np.array([0.03, 0.06, 0.05])
+    df = np.array([8.0, 25.0, np.inf])
+    iv = share_interval(pi, np.diag(se**2), 0.95, "wilson", df=df)
+    z = norm.ppf(0.975)
+    for c in range(3):
+        n = pi[c] * (1 - pi[c]) / se[c] ** 2 * (z / student_t.ppf(0.975, df[c])) ** 2
+        np.testing.assert_allclose(iv[c], proportion_confint(pi[c] * n, n, alpha=0.05,
+                                                             method="wilson"), atol=1e-12)
+    np.testing.assert_allclose(iv[2], share_interval(pi, np.diag(se**2), 0.95)[2], atol=1e-15)
+    # the logit shape takes the same quantile
+    lgt = share_interval(pi, np.diag(se**2), 0.95, "logit", df=df)
+    half = student_t.ppf(0.975, 8.0) * se[0] / (pi[0] * (1 - pi[0]))
+    np.testing.assert_allclose(np.log(lgt[0] / (1 - lgt[0])),
+                               np.log(pi[0] / (1 - pi[0])) + np.array([-half, half]), atol=1e-12)
+
+
+def test_few_labelled_rows_widen_the_multiclass_interval_and_many_do_not(model):
+    # The small-sample step: with 30 labelled rows the labelled part of the variance grows by
+    # n / (n - m) (m = 5 parameters: temperature, two biases, two shares) and the quantile is
+    # Student's with Satterthwaite's degrees of freedom, so the interval is wider than the
+    # large-sample one; the estimator's interval is this one. With n_source -> infinity the
+    # labelled part's factor vanishes and the degrees of freedom are those of the unlabelled
+    # rows alone (n_t - 1 = 1999 at most): the large-sample interval to about 1e-6.
+    from probwrap.shift._analytic import analytic_prior_cov, analytic_prior_interval
+
+    rng = np.random.default_rng(13)
+    X, y = draw(30, [0.5, 0.3, 0.2], rng)
+    X_new, _ = draw(2000, [0.3, 0.5, 0.2], rng)
+    est = PriorEstimator(random_state=0).fit(model.predict_proba(X), y)
+    q = model.predict_proba(X_new)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = est.estimate(q)
+    args = (est.calibrator_, q, np.ones(2000), 2000.0, est.source_prior_, res.ml_prior,
+            est._eta_cov())
+    small, cov = analytic_prior_interval(*args, 0.95, n_source=30.0)
+    large, cov_large = analytic_prior_interval(*args, 0.95)
+    np.testing.assert_allclose(res.ml_interval, small, atol=1e-12)
+    assert np.all(small[:, 1] - small[:, 0] > 1.05 * (large[:, 1] - large[:, 0]))
+    unl = analytic_prior_cov(*args[:-1], None)[0]
+    np.testing.assert_allclose(np.diag(cov) - np.diag(unl),
+                               (np.diag(cov_large) - np.diag(unl)) * 30 / 25, rtol=1e-10)
+    df = analytic_prior_cov(*args, n_source=30.0)[1]
+    assert np.all((df > 20) & (df < 2000))
+    df_many = analytic_prior_cov(*args, n_source=1e12)[1]
+    assert np.all((df_many >= 1999 - 1e-6) & (df_many < 1e7))
+    np.testing.assert_allclose(analytic_prior_interval(*args, 0.95, n_source=1e12)[0], large,
+                               atol=1e-6)

@@ -316,7 +316,8 @@ def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.
     src = est.source_prior_
     ml = _ml_prior(est, parts, prior, total)
     sums = rows.map_reduce(_target_interval_sums, estimator, est.calibrator_, src, ml, unit)
-    bounds = interval_from_sums(sums, n_eff, ml, est._labelled_cov, est.confidence_level)[0]
+    bounds = interval_from_sums(sums, n_eff, ml, est._labelled_cov, est.confidence_level,
+                                est.n_source_effective_)[0]
     level = est.confidence_level
     return ml, _widen(bounds, prior, ml, n_eff, level), _widen(bounds, ml, ml, n_eff, level)
 

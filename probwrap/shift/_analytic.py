@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import numpy as np
 from scipy.stats import norm
+from scipy.stats import t as student_t
 
 from ._calibration import _log_softmax, scale_penalty
 
@@ -182,29 +183,80 @@ def target_sums(
     return np.array([total]), w @ psi, (psi * w[:, None]).T @ psi, d * total
 
 
-def interval_from_sums(
+def labelled_dof(n_source: float | None, n_params: int) -> float | None:
+    """Residual degrees of freedom of the labelled rows' estimates: Kish's effective number of
+    labelled rows ``n_source`` less the ``n_params`` parameters fitted to them (at least 1);
+    None without ``n_source``."""
+    if n_source is None or not np.isfinite(float(n_source)):
+        return None
+    return max(float(n_source) - float(n_params), 1.0)
+
+
+def cov_from_sums(
     sums: tuple[np.ndarray, ...], n_eff: float, prior: np.ndarray,
-    eta_cov: np.ndarray | None, confidence_level: float,
-) -> tuple[np.ndarray, np.ndarray]:
-    """The interval and covariance of :func:`analytic_prior_interval` from :func:`target_sums`
-    (added over blocks)."""
+    eta_cov: np.ndarray | None, n_source: float | None = None,
+) -> tuple[np.ndarray, np.ndarray | None]:
+    """Covariance of the ``k`` shares from :func:`target_sums` (added over blocks) and, with
+    ``n_source`` (Kish's effective number of labelled rows), the small-sample step: the
+    labelled part ``A^-1 D Sigma_eta D^T A^-T`` scaled by ``n_s / (n_s - m)``, ``m`` the
+    parameters fitted to the labelled rows — the degrees-of-freedom correction of the
+    sandwich, "HC1" of MacKinnon & White (1985, "Some heteroskedasticity-consistent covariance
+    matrix estimators with improved finite sample properties", J. Econometrics 29, p. 309;
+    cited from memory; statsmodels' least squares ``cov_type="HC1"`` scales by the same factor,
+    tested) — and per
+    share Satterthwaite's (1946) degrees of freedom of the two variance parts,
+
+    .. math:: \\nu_c = \\frac{(a_c + b_c)^2}{a_c^2 / (n_t - 1) + b_c^2 / (n_s - m)}
+
+    (``a_c``, ``b_c`` the unlabelled and labelled parts of share ``c``'s variance; Welch 1947,
+    as the two-class score interval does). Returns ``(cov, df)``; ``df`` None without
+    ``n_source`` (the normal reference)."""
     total, spsi, spp, sd = sums
     total = float(np.asarray(total).ravel()[0])
     pi = np.asarray(prior, dtype=float)
     k = pi.shape[0]
     mean, second, d = spsi / total, spp / total, sd / total
     a = -second
-    middle = (second - np.outer(mean, mean)) / max(float(n_eff), 1.0)
-    if eta_cov is not None:
-        if d.shape[1] != eta_cov.shape[0]:
-            raise ValueError("The labelled summary does not match the calibration.")
-        middle = middle + d @ eta_cov @ d.T
+    n_t = max(float(n_eff), 1.0)
+    middle_t = (second - np.outer(mean, mean)) / n_t
     a_inv = np.linalg.pinv(a)
-    cov_free = a_inv @ middle @ a_inv.T
     # all k shares: share 0 is one minus the others
     t = np.vstack([-np.ones((1, k - 1)), np.eye(k - 1)])
-    cov = t @ cov_free @ t.T
-    return share_interval(pi, cov, confidence_level), cov
+    cov_t = t @ a_inv @ middle_t @ a_inv.T @ t.T
+    if eta_cov is None:
+        return cov_t, None
+    if d.shape[1] != eta_cov.shape[0]:
+        raise ValueError("The labelled summary does not match the calibration.")
+    cov_s = t @ a_inv @ (d @ eta_cov @ d.T) @ a_inv.T @ t.T
+    dof = labelled_dof(n_source, eta_cov.shape[0])
+    if dof is None:
+        return cov_t + cov_s, None
+    cov_s = cov_s * (float(n_source) / dof)
+    df = satterthwaite_df((np.diag(cov_t), np.diag(cov_s)), (max(n_t - 1.0, 1.0), dof))
+    return cov_t + cov_s, df
+
+
+def satterthwaite_df(variances, dofs) -> np.ndarray:
+    """Satterthwaite's (1946) degrees of freedom of a sum of independent variance estimates,
+    ``(sum v_i)^2 / sum (v_i^2 / dof_i)`` (elementwise over arrays ``v_i``; inf where every
+    part is 0). For the two parts ``s_1^2 / n_1`` and ``s_2^2 / n_2`` with ``n_i - 1``
+    degrees of freedom it is Welch's (1947) t-test's (tested against SciPy's
+    ``ttest_ind(..., equal_var=False).df``)."""
+    parts = [np.maximum(np.asarray(v, dtype=float), 0.0) for v in variances]
+    total = sum(parts)
+    spread = sum(v**2 / float(d) for v, d in zip(parts, dofs, strict=True))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(spread > 0, total**2 / np.maximum(spread, 1e-300), np.inf)
+
+
+def interval_from_sums(
+    sums: tuple[np.ndarray, ...], n_eff: float, prior: np.ndarray,
+    eta_cov: np.ndarray | None, confidence_level: float, n_source: float | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """The interval and covariance of :func:`analytic_prior_interval` from :func:`target_sums`
+    (added over blocks); with ``n_source`` the small-sample step of :func:`cov_from_sums`."""
+    cov, df = cov_from_sums(sums, n_eff, prior, eta_cov, n_source)
+    return share_interval(prior, cov, confidence_level, df=df), cov
 
 
 #: Shape of the per-share interval of :func:`share_interval` used by default.
@@ -212,7 +264,7 @@ SHARE_INTERVAL_SHAPE = "wilson"
 
 
 def share_interval(pi: np.ndarray, cov: np.ndarray, confidence_level: float,
-                   shape: str | None = None) -> np.ndarray:
+                   shape: str | None = None, df: np.ndarray | None = None) -> np.ndarray:
     """Per-share interval from the delta-method covariance ``cov`` of the shares ``pi``: the
     score (Wilson) interval on the implied effective row count (``shape="wilson"``, the
     default) or the normal interval on the logit scale of each share (``shape="logit"``).
@@ -239,6 +291,13 @@ def share_interval(pi: np.ndarray, cov: np.ndarray, confidence_level: float,
     instead of the Wald test's, narrower than the logit interval where ``se_c`` is large next to
     a share near 0 or 1 (tested against statsmodels' ``proportion_confint(method="wilson")``).
     ``None``: ``SHARE_INTERVAL_SHAPE``.
+
+    ``df`` (per share, or None for the normal quantile): Student's t quantile with those
+    degrees of freedom in place of the normal one, in either shape. For the Wilson shape that
+    is the score interval on the degrees-of-freedom-adjusted effective row count ``n_c (z /
+    t_df)^2`` of Korn & Graubard (1998, "Confidence intervals for proportions with small
+    expected number of positive counts estimated from survey data", Survey Methodology 24,
+    p. 193; cited from memory).
     """
     from scipy.special import expit, logit
 
@@ -247,7 +306,11 @@ def share_interval(pi: np.ndarray, cov: np.ndarray, confidence_level: float,
         raise ValueError(f"`shape` must be 'logit' or 'wilson'; got {shape!r}.")
     pi = np.asarray(pi, dtype=float)
     se = np.sqrt(np.maximum(np.diag(cov), 0.0))
-    zq = float(norm.ppf(0.5 + confidence_level / 2.0))
+    zq = np.full(pi.shape[0], float(norm.ppf(0.5 + confidence_level / 2.0)))
+    if df is not None:
+        dfs = np.broadcast_to(np.asarray(df, dtype=float), pi.shape)
+        small = np.isfinite(dfs) & (dfs < 1e7)
+        zq[small] = student_t.ppf(0.5 + confidence_level / 2.0, np.maximum(dfs[small], 1.0))
     lo = np.clip(pi - zq * se, 0.0, 1.0)
     hi = np.clip(pi + zq * se, 0.0, 1.0)
     inside = (pi > 0.0) & (pi < 1.0)
@@ -256,16 +319,17 @@ def share_interval(pi: np.ndarray, cov: np.ndarray, confidence_level: float,
         if np.any(inside):
             p = pi[inside]
             n = p * (1.0 - p) / se[inside] ** 2
-            z2n = zq * zq / n
+            z = zq[inside]
+            z2n = z * z / n
             centre = (p + z2n / 2.0) / (1.0 + z2n)
-            half = zq / (1.0 + z2n) * np.sqrt(p * (1.0 - p) / n + z2n / (4.0 * n))
+            half = z / (1.0 + z2n) * np.sqrt(p * (1.0 - p) / n + z2n / (4.0 * n))
             lo[inside] = np.clip(centre - half, 0.0, 1.0)
             hi[inside] = np.clip(centre + half, 0.0, 1.0)
         return np.column_stack([lo, hi])
     if np.any(inside):
         p = pi[inside]
         with np.errstate(over="ignore"):
-            half = zq * se[inside] / (p * (1.0 - p))
+            half = zq[inside] * se[inside] / (p * (1.0 - p))
             centre = logit(p)
             lo[inside] = expit(centre - half)
             hi[inside] = expit(centre + half)
@@ -275,10 +339,22 @@ def share_interval(pi: np.ndarray, cov: np.ndarray, confidence_level: float,
 def analytic_prior_interval(
     cal, proba: np.ndarray, w: np.ndarray, n_eff: float, source_prior: np.ndarray,
     prior: np.ndarray, eta_cov: np.ndarray | None, confidence_level: float,
+    n_source: float | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Delta-method interval of the maximum-likelihood ``prior`` of unlabelled rows ``proba``
     (raw model posteriors; ``cal`` the fitted calibration or None). Returns ``(interval of
     shape (k, 2), covariance of the k shares)``. ``eta_cov`` None: the labelled rows' error
-    is left out (the unlabelled rows' sampling error only)."""
+    is left out (the unlabelled rows' sampling error only). ``n_source`` (Kish's effective
+    number of labelled rows): the small-sample step of :func:`cov_from_sums` (None: the
+    large-sample interval)."""
     sums = target_sums(cal, proba, w, source_prior, prior)
-    return interval_from_sums(sums, n_eff, prior, eta_cov, confidence_level)
+    return interval_from_sums(sums, n_eff, prior, eta_cov, confidence_level, n_source)
+
+
+def analytic_prior_cov(
+    cal, proba: np.ndarray, w: np.ndarray, n_eff: float, source_prior: np.ndarray,
+    prior: np.ndarray, eta_cov: np.ndarray | None, n_source: float | None = None,
+) -> tuple[np.ndarray, np.ndarray | None]:
+    """``(covariance, degrees of freedom per share)`` behind :func:`analytic_prior_interval`."""
+    sums = target_sums(cal, proba, w, source_prior, prior)
+    return cov_from_sums(sums, n_eff, prior, eta_cov, n_source)

@@ -497,7 +497,7 @@ class PriorEstimator(_Resampling):
                 # labelled rows' error through the calibration and the source prior
                 bounds = analytic_prior_interval(
                     self.calibrator_, p_raw, w, n_eff, src, ml, self._eta_cov(),
-                    self.confidence_level,
+                    self.confidence_level, n_source=n_src,
                 )[0]
                 ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, ml, n_eff, self.confidence_level)
