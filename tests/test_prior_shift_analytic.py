@@ -363,3 +363,43 @@ def test_few_labelled_rows_widen_the_multiclass_interval_and_many_do_not(model):
     assert np.all((df_many >= 1999 - 1e-6) & (df_many < 1e7))
     np.testing.assert_allclose(analytic_prior_interval(*args, 0.95, n_source=1e12)[0], large,
                                atol=1e-6)
+
+
+@pytest.mark.parametrize("k", [2, 3])
+def test_an_interval_on_few_labelled_rows_warns_and_one_on_enough_does_not(model, k):
+    # Fewer than FEW_LABELLED_ROWS (100) effective labelled rows: the interval warns
+    # (FewLabelledRowsWarning, with the coverage measured in benchmarks/shift.py); 150 rows, or
+    # no interval asked for, do not. Kish's count decides, so 200 rows of which 150 carry
+    # almost all the weight still warn. The wrapper passes it on.
+    from probwrap.shift import FewLabelledRowsWarning
+
+    rng = np.random.default_rng(14)
+    X, y = draw(200, [0.5, 0.3, 0.2], rng)
+    X_new, _ = draw(500, [0.3, 0.5, 0.2], rng)
+    p, q = model.predict_proba(X), model.predict_proba(X_new)
+    if k == 2:
+        keep = y < 2
+        X, y, p = X[keep], y[keep], p[keep][:, :2] / p[keep][:, :2].sum(1, keepdims=True)
+        q = q[:, :2] / q[:, :2].sum(1, keepdims=True)
+
+    def categories(n, **kw):
+        with warnings.catch_warnings(record=True) as seen:
+            warnings.simplefilter("always")
+            PriorEstimator(**{"random_state": 0, "n_resamples": 20, **kw}).fit(
+                p[:n], y[:n]).estimate(q)
+        return [w.category for w in seen]
+
+    assert FewLabelledRowsWarning in categories(60)
+    assert FewLabelledRowsWarning not in categories(150)
+    assert FewLabelledRowsWarning not in categories(60, interval="bca", n_resamples=0)
+    weights = np.where(np.arange(len(y)) < 60, 1.0, 1e-3)
+    with pytest.warns(FewLabelledRowsWarning, match="effective labelled rows"):
+        PriorEstimator(random_state=0).fit(p, y, sample_weight=weights).estimate(q)
+    with pytest.warns(FewLabelledRowsWarning, match="Coverage with few labelled rows"):
+        PriorShiftWrapper(FrozenEstimator(model) if k == 3 else _binary_model(model, X, y),
+                          random_state=0).fit(X[:60], y[:60]).adapt(X_new)
+
+
+def _binary_model(model, X, y):
+    """A two-class logistic regression on the rows of classes 0 and 1 (the test's k=2 case)."""
+    return FrozenEstimator(LogisticRegression(C=0.05).fit(X, y))

@@ -13,6 +13,7 @@ from ._change_points import ChangePointResult, change_point_posterior
 from ._confusion import acc_prior, bbse_prior, binomial_interval, heldout_confusion
 from ._estimate import (
     BoundaryPriorWarning,
+    FewLabelledRowsWarning,
     PriorEstimate,
     PriorNotIdentifiedWarning,
     em_prior,
@@ -25,6 +26,7 @@ from ._shift_tests import ShiftTestResult, shift_score_test, shift_test
 __all__ = [
     "BiasCorrectedScaling",
     "BoundaryPriorWarning",
+    "FewLabelledRowsWarning",
     "CALIBRATIONS",
     "ChangePointResult",
     "change_point_posterior",
