@@ -46,6 +46,8 @@ def tallied_adapt(
     w = check_sample_weight(sample_weight, np.asarray(proba).shape[0])
     centre = res.ml_prior if res.ml_prior is not None else res.prior
     if res.identified:
+        # the same shortfall with few labelled rows as the in-memory interval's
+        est._warn_few_labelled(getattr(est, "n_source_effective_", None))
         interval = tally_prior_interval(
             est, source, np.asarray(proba, dtype=float), w, target, centre,
             n_replicates=est.n_resamples, seed=replicate_seed(rs),

@@ -449,3 +449,48 @@ def test_monitor_leaves_out_an_empty_block_with_a_warning(client, binary):
     assert table["batch"].tolist() == [0, 2]
     local = model.monitor(X_new, batch_size=1000)
     np.testing.assert_allclose(table["prior"], local["prior"], atol=1e-12)
+
+
+@pytest.mark.parametrize("k", [2, 3])
+def test_few_labelled_rows_warn_on_dask_as_in_memory(client, binary, three, k):
+    # an interval of the class priors on fewer than 100 labelled rows draws the in-memory
+    # FewLabelledRowsWarning on the Dask paths too (tallied labelled rows, binary Poisson
+    # replicates, multiclass analytic interval from block sums); 150 rows do not
+    from probwrap.shift import FewLabelledRowsWarning
+
+    model = binary if k == 2 else three
+    X_new, _ = _data(N, seed=21, k=k)
+    for n_lab, expected in ((60, True), (150, False)):
+        X, y = _data(n_lab, seed=20, k=k)
+        for fit_rows in ((X, y), _dask(X, y, chunks=40)):
+            wrapper = PriorShiftWrapper(model, n_resamples=30, random_state=0)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                wrapper.fit(*fit_rows)
+            # unlabelled rows on Dask, and in memory after a Dask fit (the tallied Poisson
+            # interval)
+            for X_adapt in (_dask(X_new)[0], X_new):
+                with warnings.catch_warnings(record=True) as caught:
+                    warnings.simplefilter("always")
+                    wrapper.adapt(X_adapt)
+                few = [c for c in caught if issubclass(c.category, FewLabelledRowsWarning)]
+                assert len(few) == expected, (n_lab, type(fit_rows[0]).__name__,
+                                              type(X_adapt).__name__)
+
+
+def test_multiclass_dask_fit_gives_the_interval_to_unlabelled_rows_in_memory(client, three):
+    # a three-class fit on Dask rows kept n_resamples=0 on its estimator, so unlabelled rows
+    # passed in memory afterwards got target_prior_interval_ None while Dask ones got the
+    # analytic interval; now the four combinations of fit and adapt input agree
+    X, y = _data(600, seed=20, k=3)
+    X_new, _ = _data(N, seed=21, k=3)
+    got = []
+    for fit_rows in ((X, y), _dask(X, y, chunks=200)):
+        wrapper = PriorShiftWrapper(three, n_resamples=30, random_state=0).fit(*fit_rows)
+        for X_adapt in (X_new, _dask(X_new)[0]):
+            wrapper.adapt(X_adapt)
+            assert wrapper.target_prior_interval_ is not None
+            got.append((wrapper.target_prior_, wrapper.target_prior_interval_))
+    for prior, interval in got[1:]:
+        np.testing.assert_allclose(prior, got[0][0], rtol=0, atol=1e-9)
+        np.testing.assert_allclose(interval, got[0][1], rtol=0, atol=1e-9)

@@ -143,7 +143,10 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     """Fit a :class:`probwrap.shift.PriorEstimator` from labelled multiclass Dask or Spark rows.
 
     Sets ``estimator_``, ``classes_`` (and feature attributes) on ``owner``; returns the
-    estimator, whose ``n_resamples`` is 0 (no bootstrap for multiclass Dask input).
+    estimator. Its ``n_resamples`` is the owner's where the analytic interval is prepared
+    (:func:`_wants_interval`), so that unlabelled rows passed in memory after a Dask fit get
+    that interval too (it was 0, and their ``target_prior_interval_`` None); 0 otherwise (no
+    bootstrap for multiclass Dask input).
     """
     from ..calibration._logodds import clip_from_smallest
     from ..shift import PriorEstimator
@@ -183,7 +186,8 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
         owner._warn_few_class_rows(np.asarray(weighted, dtype=np.int64))
         est = PriorEstimator(
             owner.method, calibration=owner.calibration, tol=owner.em_tol,
-            max_iter=owner.em_max_iter, n_resamples=0,
+            max_iter=owner.em_max_iter,
+            n_resamples=int(owner.n_resamples) if _wants_interval(owner) else 0,
             confidence_level=owner.confidence_level, random_state=owner.random_state,
             prior_strength=owner.prior_strength,
         )
@@ -314,6 +318,7 @@ def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.
     from ..shift._resample import _widen
 
     src = est.source_prior_
+    est._warn_few_labelled(est.n_source_effective_)  # as in memory
     ml = _ml_prior(est, parts, prior, total)
     sums = rows.map_reduce(_target_interval_sums, estimator, est.calibrator_, src, ml, unit)
     bounds = interval_from_sums(sums, n_eff, ml, est._labelled_cov, est.confidence_level,
