@@ -22,14 +22,18 @@ generator to them; nothing is copied):
   cv="prefit")``, the plug-in cutoff and 0.5 on the same rows.
 * ``--only user``: pandas frames, string and categorical labels, frequency weights against
   duplicated rows, scaled weights, unsorted ``classes_`` (``fresh_data_sweep.user_checks``).
+* ``--only prior``: ``PriorShiftWrapper.adapt``'s estimate and 95 % interval of the test
+  prevalence against the truth, with test rows at 0.5x, 1x and 2x their prevalence
+  (:func:`prior_checks`).
 
 Run: ``nice python benchmarks/wide_data_sweep.py --quick`` (about a minute and a half: the
 wrappers on three sets with two base models, and the user part on them),
 ``nice python benchmarks/wide_data_sweep.py --seeds 1`` (the wrappers on every set, five models;
 ten minutes on a quiet machine, about half an hour on a busy one; it ends with the worst
 cells of each wrapper beside the model's own and scikit-learn's), ``--only cost --seeds 1``,
-``--only user``. ``--skip a,b`` leaves out sets whose names contain ``a`` or ``b``; ``--list``
-prints the tasks (rows, features, classes, smallest share).
+``--only user``, ``--only prior`` (a few minutes each). ``--skip a,b`` leaves out sets whose
+names contain ``a`` or ``b``; ``--list`` prints the tasks (rows, features, classes, smallest
+share).
 """
 
 from __future__ import annotations
@@ -278,6 +282,91 @@ def worst_cells(n: int = 5) -> None:
         print(f"  {key[0]} {key[1]}: " + "; ".join(f"{w} {r:.2f}" for _, _, w, r in rows))
 
 
+def prior_checks(quick: bool) -> None:
+    """``PriorShiftWrapper.adapt``'s estimate and 95 % interval of the test prevalence.
+
+    Binary sets, the five base models trained on a quarter of the rows, 20, 60 and 200 random
+    labelled rows, test rows (at most 800 of the others) resampled to 0.5x, 1x and 2x their
+    prevalence. Counted: intervals that miss the true prevalence, estimates more than 0.3 off
+    without any warning, a maximum-likelihood share at 0 or 1 without the warning that says so,
+    a target prior within 0.02 of 0 or 1 without a warning, and errors."""
+    from sklearn.frozen import FrozenEstimator
+
+    from probwrap import CalibrationWrapper, PriorShiftWrapper
+
+    out = []
+    for name, X, y in wide_data_sets(quick):
+        if len(np.unique(y)) != 2:
+            continue
+        X = np.asarray(X, float)
+        idx = np.random.default_rng(0).permutation(len(y))
+        n_fit = min(len(idx) // 4, 600)
+        fit, rest = idx[:n_fit], idx[n_fit:]
+        for mname, model in S.base_models(quick, 0):
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                model.fit(X[fit], y[fit])
+                if mname == "svm_margins":
+                    model = CalibrationWrapper(FrozenEstimator(model), method="platt").fit(
+                        X[fit], y[fit])
+            frozen = FrozenEstimator(model)
+            rng = np.random.default_rng([0, 7])
+            for n in (20, 60, 200):
+                if len(rest) < n + 100:
+                    continue
+                cal = rng.choice(rest, n, replace=False)
+                test = rest[~np.isin(rest, cal)][:800]
+                pos, neg = test[y[test] == 1], test[y[test] == 0]
+                if len(np.unique(y[cal])) < 2 or min(len(pos), len(neg)) < 3:
+                    continue
+                for factor in (0.5, 1.0, 2.0):
+                    target = float(np.clip(factor * len(pos) / len(test), 0.02, 0.9))
+                    n_pos = max(1, min(len(test) - 1, int(round(target * len(test)))))
+                    rows = np.concatenate([rng.choice(pos, n_pos),
+                                           rng.choice(neg, len(test) - n_pos)])
+                    truth = n_pos / len(test)
+                    with warnings.catch_warnings(record=True) as caught:
+                        warnings.simplefilter("always")
+                        try:
+                            ad = PriorShiftWrapper(frozen, random_state=0, n_resamples=30).fit(
+                                X[cal], y[cal]).adapt(X[rows])
+                        except Exception as e:  # noqa: BLE001 - counting failures is the point
+                            F.flag("adapt fails", f"{name}|{mname}|n{n}|x{factor}", str(e))
+                            continue
+                    said = " | ".join(str(m.message) for m in caught)
+                    lo, hi = ad.target_prior_interval_[1]
+                    est, ml = float(ad.target_prior_[1]), float(ad.prior_estimate_.ml_prior[1])
+                    out.append((name, mname, n, factor, truth, est, ml, lo, hi, said))
+        print(f"prior: {name} done", flush=True)
+    if not out:
+        return
+    truth, est, ml, lo, hi = (np.array([c[i] for c in out]) for i in range(4, 9))
+    n, factor = np.array([c[2] for c in out]), np.array([c[3] for c in out])
+    said = [c[9] for c in out]
+    miss = (truth < lo) | (truth > hi)
+    print(f"\nPrior estimates ({len(out)} cells): share of 95 % intervals missing the true "
+          "prevalence | mean |estimate - truth| | median interval width")
+    for size in (20, 60, 200):
+        line = f"  {size:3d} labelled rows"
+        for f in (0.5, 1.0, 2.0):
+            s = (n == size) & (factor == f)
+            if s.any():
+                line += (f"   x{f}: {miss[s].mean():5.1%} | {np.abs(est - truth)[s].mean():.3f} | "
+                         f"{np.median((hi - lo)[s]):.2f} ({s.sum()})")
+        print(line)
+    edge = (ml < 1e-9) | (ml > 1 - 1e-9)
+    near = (est < 0.02) | (est > 0.98)
+    off = (np.abs(est - truth) > 0.3) & np.array([s == "" for s in said])
+    print(f"  maximum-likelihood share at 0 or 1: {edge.sum()}, without the warning that says "
+          f"so: {sum('edge' not in said[i] for i in np.flatnonzero(edge))}")
+    print(f"  target prior within 0.02 of 0 or 1: {near.sum()}, without any warning: "
+          f"{sum(said[i] == '' for i in np.flatnonzero(near))}")
+    print(f"  estimate more than 0.3 off with no warning: {off.sum()}; the worst: " + "; ".join(
+        f"{out[i][0]}|{out[i][1]}|n{out[i][2]}|x{out[i][3]} truth {out[i][4]:.3f} estimate "
+        f"{out[i][5]:.3f} [{out[i][7]:.2f}, {out[i][8]:.2f}]"
+        for i in sorted(np.flatnonzero(off), key=lambda i: -abs(est[i] - truth[i]))[:4]))
+
+
 def main(argv: list[str]) -> None:
     quick = "--quick" in argv
     if "--list" in argv:
@@ -298,8 +387,10 @@ def main(argv: list[str]) -> None:
         S.cost_sweep_multiclass(quick, seeds, True)
     elif only == "user":
         F.user_checks(quick, sets=wide_data_sets)
+    elif only == "prior":
+        prior_checks(quick)
     else:
-        raise SystemExit(f"--only must be wrappers, cost or user; got {only!r}")
+        raise SystemExit(f"--only must be wrappers, cost, user or prior; got {only!r}")
 
 
 if __name__ == "__main__":
