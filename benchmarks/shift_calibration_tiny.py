@@ -8,9 +8,13 @@ own of
   the scale and the likelihood-ratio test that keeps the model's own probabilities);
 * ``CalibrationWrapper(method="auto")`` and scikit-learn's
   ``CalibratedClassifierCV(FrozenEstimator(model), method="sigmoid")`` on the same rows;
-* the same map as the wrapper with other floors before the logarithms (``--floors``), fitted on
-  the same rows through ``BiasCorrectedScaling.fit_log_proba`` exactly as the wrapper does
-  (checked against the wrapper for the default floor on every draw).
+* the same map with other features (``--floors``; all by default), fitted on the same rows
+  through ``BiasCorrectedScaling.fit_log_proba``: ``flat`` (the flat floor of ``heldout_clip``
+  always, the default before the eleventh session), ``compressed`` (the order beyond it kept,
+  compressed logarithmically, always: ``probwrap.shift._calibration.compress_tail``) and the
+  tenth session's floor rules; the wrapper (``psw``) chooses between ``flat`` and
+  ``compressed`` by cross-validation (``choose_tail``), reproduced through
+  ``BiasCorrectedScaling.fit`` on every draw.
 
 Data: 17 binary tasks with at least 250 rows, no missing values and 30 rows of each class
 (scikit-learn's breast cancer; the statsmodels, lifelines, palmerpenguins and sktime sets of
@@ -20,7 +24,8 @@ gradient boosting with 50 iterations) fitted on a quarter of the rows (at most 6
 ``--draws`` random labelled draws per cell (both classes present), the next 1,500 other rows
 scored. Printed per size: geometric means over draws, the ratio to ``auto`` by model, the share
 of draws above 1.10x the model's own, the worst draw, the worst cell (data set x model,
-geometric mean) and, for each floor rule, the cell it makes worst against the default floor.
+geometric mean) and, for each method, the cell it makes most worse than the flat floor (with
+``--floors`` naming ``flat``).
 
 Run: ``nice python benchmarks/shift_calibration_tiny.py`` (about 4 minutes on a shared 2-core
 machine with the default 12 draws; ``--no-auto`` skips ``auto`` and the sigmoid, about 2).
@@ -52,7 +57,7 @@ from probwrap import CalibrationWrapper, PriorShiftWrapper  # noqa: E402
 from probwrap.calibration._base import count_weights  # noqa: E402
 from probwrap.calibration._logodds import clip_from_smallest, proba_to_log_proba  # noqa: E402
 from probwrap.shift import BiasCorrectedScaling  # noqa: E402
-from probwrap.shift._calibration import _floor, heldout_clip  # noqa: E402
+from probwrap.shift._calibration import _floor, heldout_clip, tail_log_scores  # noqa: E402
 
 SIZES = (20, 40, 100)
 MODELS = {
@@ -82,7 +87,8 @@ def _own_class(p: np.ndarray, y: np.ndarray) -> float:
 
 #: floor rules before logarithms: name -> clip(held-out proba, held-out labels)
 FLOORS = {
-    "default": lambda p, y: heldout_clip(p),
+    "flat": lambda p, y: heldout_clip(p),
+    "compressed": None,  # the order beyond the flat floor kept (tail_log_scores), always
     "no_row_bound": lambda p, y: _smallest(p),
     "squared_bound": lambda p, y: max(_smallest(p), _row_bound(p) ** 2),
     "own_class": _own_class,
@@ -143,12 +149,20 @@ def run(draws: int, with_auto: bool, floors: tuple[str, ...]) -> None:
                             .fit(X[lab], y[lab]).predict_proba(X[test])
                     pl = model.predict_proba(X[lab])
                     for f in floors:
-                        clip = FLOORS[f](pl, y[lab])
-                        cal = BiasCorrectedScaling().fit_log_proba(
-                            proba_to_log_proba(pl, clip=clip), y[lab], clip=clip)
+                        if f == "compressed":
+                            start = heldout_clip(pl)
+                            tail = (min(_smallest(pl), start), start, abs(float(np.log(start))))
+                            cal = BiasCorrectedScaling().fit_log_proba(
+                                tail_log_scores(pl, *tail), y[lab], tail=tail)
+                        else:
+                            clip = FLOORS[f](pl, y[lab])
+                            cal = BiasCorrectedScaling().fit_log_proba(
+                                proba_to_log_proba(pl, clip=clip), y[lab], clip=clip)
                         out[f] = cal.predict_output(pt)
-                    if "default" in out:  # the wrapper's own path, reproduced
-                        np.testing.assert_allclose(out["default"], out["psw"], atol=1e-9)
+                    # the wrapper's own path, reproduced
+                    np.testing.assert_allclose(
+                        BiasCorrectedScaling().fit(pl, y[lab]).predict_output(pt), out["psw"],
+                        atol=1e-9)
                     for m in methods:
                         res[n][m].append(_log_loss(y[test], out[m]) / base)
                     where[n].append((name, model_name))
@@ -162,12 +176,12 @@ def run(draws: int, with_auto: bool, floors: tuple[str, ...]) -> None:
         for i, w in enumerate(where[n]):
             cells[w].append(i)
         ref = np.asarray(res[n]["auto" if with_auto else "psw"])
-        psw = np.asarray(res[n]["psw"])
+        psw = np.asarray(res[n]["flat" if "flat" in res[n] else "psw"])
         print(f"\n{n} labelled rows, {len(where[n])} draws; ratios: test log loss over the "
               f"model's own; '/ref': over {'auto' if with_auto else 'the wrapper'} on the draw")
         print(f"{'method':>14} {'geo':>6} {'/ref':>6} {'LR /ref':>8} {'NB /ref':>8} "
               f"{'GB /ref':>8} {'>1.10':>6} {'worst':>6} {'worst cell':>11}  "
-              f"{'cell most worse than the wrapper':>33}")
+              f"{'cell most worse than flat':>33}")
         for m in methods:
             v = np.asarray(res[n][m])
             by = {mm: geo(v[[i for i, w in enumerate(where[n]) if w[1] == mm]]

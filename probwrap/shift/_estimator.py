@@ -15,9 +15,8 @@ from sklearn.utils import check_random_state
 
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ..calibration._base import rescale_extreme_weights
-from ..calibration._logodds import proba_to_log_proba
 from ._analytic import analytic_prior_interval, labelled_parameter_cov
-from ._calibration import BiasCorrectedScaling, heldout_clip
+from ._calibration import BiasCorrectedScaling, choose_tail, tail_log_scores
 from ._confusion import acc_prior, bbse_prior, heldout_confusion
 from ._estimate import (
     BoundaryPriorWarning,
@@ -268,10 +267,16 @@ class PriorEstimator(_Resampling):
         if self.calibration is not None:
             kind = "temperature" if self.calibration == "bcts" else "vector"
             # the floor before logarithms: chosen from the held-out rows as CalibrationWrapper
-            # does (kept fixed for bootstrap refits, which start from the fitted map)
-            clip = getattr(warm_start, "clip_", None) or heldout_clip(p, w)
+            # does, and on a few hundred rows or fewer the order of the scores beyond it kept
+            # where that cross-validates better (choose_tail); kept fixed for bootstrap refits,
+            # which start from the fitted map
+            if getattr(warm_start, "clip_", None):
+                tail = (getattr(warm_start, "tail_floor_", warm_start.clip_), warm_start.clip_,
+                        getattr(warm_start, "tail_width_", 0.0))
+            else:
+                tail = choose_tail(p, y_idx, w, kind)
             cal = BiasCorrectedScaling(kind=kind).fit_log_proba(
-                proba_to_log_proba(p, clip=clip), y_idx, w, warm_start=warm_start, clip=clip
+                tail_log_scores(p, *tail), y_idx, w, warm_start=warm_start, tail=tail
             )
             p = cal.predict(p)
         prior = np.bincount(y_idx, weights=w, minlength=k) / w.sum()
