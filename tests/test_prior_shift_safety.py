@@ -230,9 +230,15 @@ def test_twenty_labelled_rows_on_bundled_breast_cancer_move_less_when_they_fit_w
         assert ratios[1] <= 1.04
         # on draw 239 (3 labelled rows of class 1) EM's estimate lies far beyond the one-step
         # estimate, and the harm bound's growth for that (estimate_amplification) already holds
-        # the entropy-only rule (0.991, was 1.161); on the others the reference is what helps
-        if seed != 239:
+        # the entropy-only rule (0.991, was 1.161); on the others the reference is what helps.
+        # Since the calibration keeps the order of the scores beyond its floor where that
+        # cross-validates better (choose_tail; chosen on all four draws) the entropy-only rule
+        # costs 1.161 / 1.015 / 1.050 on draws 205 / 210 / 236 (1.144 / 1.052 / 1.036 with the
+        # flat floor): draw 210 no longer shows the case
+        if seed in (205, 236):
             assert ratios[0] > 1.03 and ratios[1] < ratios[0]
+        elif seed == 210:
+            assert ratios[1] <= ratios[0]
 
 def test_cutoff_rises_only_where_no_shift_would_be_harmed(weak_model):
     # A weak model at a small prevalence: its rows say little about the prior while every

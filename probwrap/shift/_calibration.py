@@ -304,6 +304,13 @@ class BiasCorrectedScaling:
     add-one-half estimate for ``N`` effective rows, as for :class:`probwrap.calibration.TemperatureMap`).
     The prior touches the scales only, so the bias score equations above still hold.
 
+    The features ``z`` are the log-probabilities floored before the logarithm (see
+    :func:`heldout_clip`). :meth:`fit` on at most a few hundred rows also tries keeping the
+    order of the scores beyond that floor, compressed logarithmically, and uses it where its
+    cross-validated log loss is better by more than one standard error (:func:`choose_tail`);
+    the map and its parameters are the same either way, :meth:`log_scores` applies the
+    features chosen.
+
     A map fitted on a few rows can make a well-calibrated model worse: its biases follow the
     class shares of those few rows, its scale their noise. So the fitted map replaces the
     model's own probabilities only when a likelihood-ratio test on the same rows (Wilks 1938;
@@ -339,6 +346,12 @@ class BiasCorrectedScaling:
         Fitted biases, ``bias_[0] == 0``.
     floor_ : float
         Smallest output probability (0 with ``shrinkage=0``).
+    clip_ : float
+        Floor of the probabilities before the logarithm, or where ``tail_width_ > 0`` the
+        start of the compressed tail.
+    tail_floor_, tail_width_ : float
+        Floor below the compressed tail and its width (``tail_width_ == 0``: no tail, the
+        flat floor ``clip_``).
     identity_pvalue_ : float
         p-value of the likelihood-ratio test of the model's own probabilities against the map.
     identity_kept_ : bool
