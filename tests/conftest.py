@@ -226,6 +226,24 @@ def client():
 
 
 @pytest.fixture(scope="session")
+def cancer_nb():
+    """Naive Bayes on a third of scikit-learn's bundled breast cancer data (scores down to
+    1e-200): ``(X, y, model, test rows, pool of labelled rows)``; the prior-shift tiny-set tests
+    draw their labelled rows from the pool."""
+    import numpy as np
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.naive_bayes import GaussianNB
+
+    X, y = load_breast_cancer(return_X_y=True)
+    rng = np.random.default_rng(0)
+    idx = rng.permutation(y.shape[0])
+    fit, rest = idx[:189], idx[189:]
+    test, pool = rest[:190], rest[190:]
+    model = GaussianNB().fit(X[fit], y[fit])
+    return X, y, model, test, pool
+
+
+@pytest.fixture(scope="session")
 def report_page_parser():
     """tests/test_report_structure.py as a module, for its HTML page parser (``_Page``, ``_val``).
 

@@ -6,27 +6,13 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from scipy.stats import chi2
-from sklearn.datasets import load_breast_cancer
 from sklearn.frozen import FrozenEstimator
 from sklearn.metrics import log_loss
-from sklearn.naive_bayes import GaussianNB
 
 from probwrap import PriorShiftWrapper
 from probwrap.calibration._logodds import proba_to_log_proba
 from probwrap.shift import BiasCorrectedScaling
 from probwrap.shift._calibration import heldout_clip
-
-
-@pytest.fixture(scope="module")
-def cancer_nb():
-    """Naive Bayes on a third of scikit-learn's breast cancer: scores down to 1e-200."""
-    X, y = load_breast_cancer(return_X_y=True)
-    rng = np.random.default_rng(0)
-    idx = rng.permutation(y.shape[0])
-    fit, rest = idx[:189], idx[189:]
-    test, pool = rest[:190], rest[190:]
-    model = GaussianNB().fit(X[fit], y[fit])
-    return X, y, model, test, pool
 
 
 def test_binary_map_on_floored_log_odds_matches_statsmodels_logit(cancer_nb):
