@@ -96,10 +96,12 @@ def rescale_extreme_weights(
     --------
     >>> import warnings
     >>> import numpy as np
-    >>> with warnings.catch_warnings():
-    ...     warnings.simplefilter("ignore")
+    >>> with warnings.catch_warnings(record=True) as caught:
+    ...     warnings.simplefilter("always")
     ...     rescale_extreme_weights(np.array([2.0**300, 2.0**301]), "Demo").tolist()
     [0.5, 1.0]
+    >>> [c.category.__name__ for c in caught]
+    ['WeightScaleWarning']
     """
     top = float(sw.max()) if sw.size else 1.0
     unit = weight_unit_of(top)
