@@ -129,3 +129,57 @@ def test_thinned_search_equals_thinning_the_full_curve(make, capacity, y_dtype):
         _assert_identical(got, want)
         if np.unique(s).shape[0] + 1 > 50:
             assert got.costs.shape[0] < 200
+
+
+def test_cumulative_costs_from_class_counts_are_exact_sums():
+    # the plain path turns an integer cumulative count of positives into cumulative costs; with
+    # integer costs that is exactly the sequential sum, with fractional costs it is within two
+    # roundings of the exact rational sum (Python's fractions), across block boundaries
+    from fractions import Fraction
+
+    rng = np.random.default_rng(3)
+    n = cutoff_module._COST_BLOCK * 2 + 17
+    y = (rng.random(n) < 0.3).astype(np.int64)
+    for d_neg, d_pos in ((-1.0, 10.0), (-3.0, 0.0), (-0.1, 0.7)):
+        label = y.copy()
+        cutoff_module._counts_to_costs(label, d_neg, d_pos)
+        got = label.view(np.float64)
+        if float(d_neg).is_integer() and float(d_pos).is_integer():
+            np.testing.assert_array_equal(got, np.cumsum(np.where(y == 1, d_pos, d_neg)))
+        pos = np.cumsum(y)
+        b = cutoff_module._block_rows(n)  # rows per block: the first boundary is checked
+        for j in (0, 1, b - 1, b, n - 1):
+            exact = Fraction(d_neg) * int(j + 1 - pos[j]) + Fraction(d_pos) * int(pos[j])
+            assert abs(Fraction(float(got[j])) - exact) <= 2 * abs(exact) * Fraction(2) ** -52
+
+
+@pytest.mark.parametrize("kind", ["distinct", "mostly distinct", "few levels", "wide", "adjacent"])
+def test_middles_written_in_place_match_the_general_path(kind):
+    # the plain path writes the distinct scores and then their middles over one buffer, in
+    # blocks (from the top down); the general path builds them in fresh arrays. Same values, on
+    # more rows than one block, with ties (moved down in place or not), gaps that overflow and
+    # neighbours one ulp apart
+    from probwrap.decision._cutoff import _prepare, _RowCosts, _search_rows
+    from probwrap.decision._cutoff_rows import _MIDDLE_BLOCK
+
+    rng = np.random.default_rng(11)
+    n = 3 * _MIDDLE_BLOCK + cutoff_module._COST_BLOCK + 5
+    s = {
+        "distinct": lambda: rng.random(n),
+        "mostly distinct": lambda: np.round(rng.random(n), 6),  # about 0.92 n distinct
+        "few levels": lambda: np.round(rng.random(n), 2),
+        "wide": lambda: rng.choice([-1.7e308, -1.0, 0.0, 2.0, 1.7e308], n) * rng.random(n),
+        "adjacent": lambda: 1.0 + rng.integers(0, n, n) * np.finfo(float).eps,
+    }[kind]()
+    y = (rng.random(n) < 0.3).astype(int)
+    costs = np.array([[0.0, 1.0], [7.0, 0.0]])
+    got = search_cutoff(s, y, costs)
+    s2, yi, _, matrix, unit = _prepare(s, y, costs, None)
+    want = _search_rows(s2, _RowCosts(matrix, yi, None), None, None)
+    np.testing.assert_array_equal(got.cutoffs, want.cutoffs)
+    np.testing.assert_array_equal(got.flagged_share, want.flagged_share)
+    # the costs are scaled by a power of two (exact): tied rows summed in another order, and
+    # sums of the scaled integer costs are exact either way
+    np.testing.assert_array_equal(got.costs, want.costs * unit)
+    assert (got.cutoff, got.interval, got.flat) == (want.cutoff, want.interval, want.flat)
+    assert got.cutoffs.shape == (np.unique(s).shape[0] + 1,)

@@ -27,6 +27,7 @@ from ._cutoff_rows import (
     _DecisionEnds,
     _middle,
     _neighbour_middles,
+    _neighbour_middles_in_place,
     _RowCosts,
     _SortedRows,
 )
@@ -137,7 +138,8 @@ def _subnormals_compare() -> bool:
 
 
 def _packed_order(
-    s: np.ndarray, y: np.ndarray, label_out: np.ndarray | None = None
+    s: np.ndarray, y: np.ndarray, label_out: np.ndarray | None = None,
+    key_out: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray] | None:
     """The scores in ascending order and their classes (0/1, intp), from ONE plain sort.
 
@@ -157,7 +159,9 @@ def _packed_order(
       be non-negative; twice that plus the class is again below ``0x7FF0 << 48``.
 
     The classes ``y`` are intp or one-byte 0/1 codes; they are returned as int64 0/1, written
-    into ``label_out`` (int64, shape (n,)) when it is given. Either way the keys, read as doubles, are finite and non-negative, whose order as doubles
+    into ``label_out`` (int64, shape (n,)) when it is given; the keys, and then the sorted
+    scores, are written into ``key_out[:n]`` (int64, at least n entries) when it is given.
+    Either way the keys, read as doubles, are finite and non-negative, whose order as doubles
     is their order as integers; NumPy sorts doubles faster than integers, so they are sorted as
     doubles (as integers if the CPU flushes subnormals to zero in comparisons). Returns None
     when the scores cannot be keyed exactly or the platform is not 64-bit IEEE.
@@ -167,8 +171,10 @@ def _packed_order(
         return None
     lo, hi = float(s.min()), float(s.max())
     as_doubles = _subnormals_compare()
+    n = s.shape[0]
+    key = np.empty(n, dtype=np.int64) if key_out is None else key_out[:n]
     if lo >= 0.0 and hi < 1.5:
-        key = (s.view(np.uint64) << np.uint64(1)).view(np.int64)
+        np.left_shift(s.view(np.uint64), np.uint64(1), out=key.view(np.uint64))
         key |= y
         key.view(np.float64).sort() if as_doubles else key.sort()
         label = np.bitwise_and(key, np.int64(1), out=label_out)
@@ -177,11 +183,10 @@ def _packed_order(
     # big * 2**k < 2**-512; k in [-1536, 561], applied as two representable powers of two
     k = -512 - int(np.frexp(max(-lo, hi))[1])
     steps = [float(np.ldexp(1.0, p)) for p in (max(k, -1000), k - max(k, -1000))]
-    v = s * steps[0]
+    v = np.multiply(s, steps[0], out=key.view(np.float64))
     if steps[1] != 1.0:
         v *= steps[1]
     v += 0.0  # -0.0 + 0.0 is 0.0; every other value is unchanged
-    key = v.view(np.int64)
     del v
     # (the labels' buffer, if given, is free until after the sort: no fresh temporary)
     flip = np.right_shift(key, np.int64(63), out=label_out)  # -1 for negative scores, else 0
@@ -216,6 +221,45 @@ def _packed_order(
     return ss, label
 
 
+#: At most this many rows per block where the search works through its arrays in blocks.
+_COST_BLOCK = 1 << 16
+
+
+def _block_rows(n: int) -> int:
+    """Rows per block for ``n`` rows: about ``n / 32`` (the blocks' temporaries stay a small
+    share of the scores' memory), at least 2,048 (few Python steps), at most
+    :data:`_COST_BLOCK` (cache-sized) and never more than ``n``."""
+    return max(1, min(_COST_BLOCK, max(2048, n // 32), n))
+
+
+def _counts_to_costs(label: np.ndarray, d_neg: float, d_pos: float) -> None:
+    """Overwrite the 0/1 classes ``label`` (int64, in score order) with the cumulative cost
+    steps ``d_neg * negatives + d_pos * positives`` over the first 1, 2, ... rows, as float64
+    in the same memory (``label.view(np.float64)``).
+
+    The counts are exact integers, so each total is two rounded products and one rounded sum
+    (a sequential floating-point sum of the steps rounds once per row); with integer costs the
+    totals are exact either way, hence the same bits.
+    """
+    np.cumsum(label, out=label)
+    out = label.view(np.float64)
+    n = label.shape[0]
+    block = _block_rows(n)
+    upto = np.arange(1, block + 1, dtype=np.int64)
+    neg = np.empty(block, dtype=np.int64)
+    pos_cost = np.empty(block)
+    for i in range(0, n, block):
+        pos = label[i:i + block]
+        m = pos.shape[0]
+        np.subtract(upto[:m], pos, out=neg[:m])
+        if i:
+            neg[:m] += i
+        np.multiply(pos, d_pos, out=pos_cost[:m])  # read before the block is overwritten
+        target = out[i:i + block]
+        np.multiply(neg[:m], d_neg, out=target)
+        target += pos_cost[:m]
+
+
 def _search_plain_rows(
     s: np.ndarray, y: np.ndarray, matrix: np.ndarray, cap: float | None, bounds,
     max_points: int | None = None,
@@ -228,8 +272,8 @@ def _search_plain_rows(
     merged: a stable ``argsort`` of the two runs (one linear merge) tells which merged entries
     are positives and, gathered through, gives the merged scores. Either way the tied rows come
     negatives first, so the cumulative sums are the same. No per-row index into the original
-    rows is needed. The classes, then each row's step of the cost, then their cumulative sum
-    are written into the buffer that becomes the cost curve; the flagged shares are built only
+    rows is needed. The classes, then their cumulative count, then the cumulative cost
+    (:func:`_counts_to_costs`) are written into the buffer that becomes the cost curve; the flagged shares are built only
     once the sorted scores are freed (the capacity check reads the few shares it needs).
 
     With ``max_points``, the curve is returned as :func:`_thin_cost_curve` would thin it, but
@@ -241,9 +285,12 @@ def _search_plain_rows(
     n_neg = n - n_pos
     buf = np.empty(n + 1)  # the classes, the steps, then the cumulative sums, in score order
     label = buf[1:].view(np.int64)
-    packed = _packed_order(s, y, label)
+    # the sorted scores, later the distinct ones, then the returned middles between them: one
+    # buffer written over (a fresh array costs its page faults: a third of a sort at 1e6 rows)
+    keys = np.empty(n + 1)
+    packed = _packed_order(s, y, label, keys.view(np.int64))
     if packed is not None:
-        ss = packed[0]
+        ss = keys[:n]
         del packed
     else:
         positive = y == 1
@@ -256,7 +303,7 @@ def _search_plain_rows(
         runs[n_neg:] = part
         del positive, part
         order = np.argsort(runs, kind="stable")  # two sorted runs: one linear merge
-        ss = runs[order]  # the merged scores (a gather along two monotone runs)
+        ss = np.take(runs, order, out=keys[:n])  # merged scores: a gather along two runs
         np.greater_equal(order, n_neg, out=label)
         del order, runs
     last = np.empty(n, dtype=bool)
@@ -267,15 +314,14 @@ def _search_plain_rows(
     d_neg = float(matrix[0, 0] - matrix[0, 1])
     d_pos = float(matrix[1, 0] - matrix[1, 1])
     total_flag_all = float(np.dot(np.array([n_neg, n_pos], dtype=float), matrix[:, 1]))
-    # each row's step, d_neg or d_pos, written over its class in place: the bit pattern of
-    # d_neg, with the bits in which d_pos differs flipped where the class is 1
-    neg_bits, pos_bits = (int(b) for b in np.array([d_neg, d_pos]).view(np.int64))
-    np.negative(label, out=label)  # 0, or -1 (every bit set)
-    label &= np.int64(neg_bits ^ pos_bits)
-    label ^= np.int64(neg_bits)
+    # the total of the steps over the first j rows is d_neg * (negatives among them) + d_pos *
+    # (positives among them): the positives are counted by an integer cumulative sum in place
+    # (exact, and far faster than a sequential floating-point sum), then each count is turned
+    # into the total in blocks that stay in cache, written over the count it came from
+    _counts_to_costs(label, d_neg, d_pos)
     del label
     step = buf[1:]
-    np.cumsum(step, out=step)
+    in_place = True  # the middles are written over the distinct scores in `keys`
     if last.all():
         del last
         u, m, ends = ss, n, None
@@ -285,7 +331,18 @@ def _search_plain_rows(
         ends = np.flatnonzero(last)
         del last
         m = ends.shape[0]
-        u = ss[ends]
+        in_place = 2 * (m + 1) >= n  # else a small fresh array: `keys` is not kept alive
+        if in_place:
+            # the last of each run of ties, moved down within `keys` (ends[i] >= i: each block
+            # reads only entries at or above the ones it writes, none written yet)
+            block = _block_rows(m)
+            for i in range(0, m, block):
+                part = ends[i:i + block]
+                keys[i:i + part.shape[0]] = ss[part]
+            u = keys[:m]
+        else:
+            u = ss[ends]
+            del keys
         del ss
         cost = np.empty(m + 1)
         np.take(step, ends, out=cost[1:])
@@ -346,8 +403,14 @@ def _search_plain_rows(
         )
         return result
     del lower, upper
-    mid = _neighbour_middles(u, lo_ext, hi_ext)
-    del u
+    if in_place:
+        del u
+        _neighbour_middles_in_place(keys, m, lo_ext, hi_ext)
+        mid = keys if m == n else keys[:m + 1]
+        del keys
+    else:
+        mid = _neighbour_middles(u, lo_ext, hi_ext)
+        del u
     if ends is None:
         share = np.arange(n, -1, -1, dtype=np.float64)
     else:
