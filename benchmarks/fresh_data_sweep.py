@@ -498,7 +498,7 @@ def main(argv: list[str]) -> None:
     elif only == "wrappers":
         S.main(["--sets", "new", *[a for a in argv if a not in ("--only", "wrappers")]])
     elif only == "cost":
-        seeds = range(int(argv[argv.index("--seeds") + 1]) if "--seeds" in argv else 2)
+        seeds = S.seed_range(argv, 2)
         S.cost_sweep(quick, seeds, True)
         S.cost_sweep_multiclass(quick, seeds, True)
     elif only == "user":

@@ -29,7 +29,7 @@ Printed: a table of problem counts by kind and component ("none" where none), th
 first problems with their draw.
 
 Run: ``nice python benchmarks/small_data_sweep.py`` (three seeds; tens of minutes on a busy
-machine), ``--seeds 1``, or ``--quick`` (iris, wine, breast cancer; naive Bayes and forest;
+machine), ``--seeds 1`` (``--first-seed K`` starts the seeds at ``K``: fresh draws), or ``--quick`` (iris, wine, breast cancer; naive Bayes and forest;
 one seed; about half a minute). ``--sets new`` runs only the sets the first sweep did not use
 (:func:`new_data_sets`; with them also: the five base models, 200-row draws, the test log loss
 of scikit-learn's ``CalibratedClassifierCV`` with the comparable method on the same rows
@@ -793,10 +793,17 @@ def cost_sweep_multiclass(quick: bool, seeds, new: bool = False) -> None:
 
 
 # --------------------------------------------------------------------------- main
+def seed_range(argv: list[str], default: int) -> range:
+    """The seeds of a run: ``--seeds N`` of them (``default`` without it), from ``--first-seed
+    K`` on (0 without it), so that draws no earlier run has looked at can be made."""
+    n_seeds = int(argv[argv.index("--seeds") + 1]) if "--seeds" in argv else default
+    first = int(argv[argv.index("--first-seed") + 1]) if "--first-seed" in argv else 0
+    return range(first, first + n_seeds)
+
+
 def main(argv: list[str]) -> None:
     quick = "--quick" in argv
-    n_seeds = int(argv[argv.index("--seeds") + 1]) if "--seeds" in argv else (1 if quick else 3)
-    seeds = range(n_seeds)
+    seeds = seed_range(argv, 1 if quick else 3)
     if "--only" in argv and argv[argv.index("--only") + 1] == "cost":
         new = "--sets" in argv and argv[argv.index("--sets") + 1] == "new"
         cost_sweep(quick, seeds, new)

@@ -382,7 +382,7 @@ def main(argv: list[str]) -> None:
         if quick:
             F.user_checks(True, sets=wide_data_sets)
     elif only == "cost":
-        seeds = range(int(argv[argv.index("--seeds") + 1]) if "--seeds" in argv else 1)
+        seeds = S.seed_range(argv, 1)
         S.cost_sweep(quick, seeds, True)
         S.cost_sweep_multiclass(quick, seeds, True)
     elif only == "user":

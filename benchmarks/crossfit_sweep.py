@@ -1,0 +1,192 @@
+"""The cross-fitted path as a new user meets it: ``CalibrationWrapper(model).fit(X, y)``.
+
+Every other calibration benchmark hands the wrapper a model fitted elsewhere
+(``FrozenEstimator``). This one gives it an unfitted model and all the training rows, as
+``CalibratedClassifierCV(model)`` is most often used, and compares the two side by side on the
+same rows: 100 or 300 training rows drawn from a real data set, the rest (at most 3,000) as test
+rows. Nothing is downloaded.
+
+Per cell (data set, base model, training rows) it records the test log loss of
+
+* ``pw``: ``CalibrationWrapper(model)`` with its defaults (``method="auto"``, five stratified
+  folds: the map is fitted on the out-of-fold predictions, and the model refitted on all rows
+  predicts);
+* ``pw_folds``: a measured proposal, not an option of the wrapper: the same fitted map applied to
+  each of the five fold models (those whose out-of-fold predictions the map was fitted on) and the
+  five calibrated probabilities averaged. It is built here from the fitted wrapper (its
+  ``estimator_`` swapped for each fold model on a shallow copy), with the wrapper's folds
+  (``StratifiedKFold(5)``);
+* scikit-learn's ``CalibratedClassifierCV(model, method=m, cv=5, ensemble=e)`` for ``m`` in
+  sigmoid, temperature (and isotonic with ``--isotonic``) and ``e`` True (its default: one
+  calibrator per fold model, averaged) and False (refit on all rows, as ``pw``);
+* ``raw``: the model fitted on all training rows, uncalibrated (models with ``predict_proba``).
+
+It also counts crashes and probabilities of exactly 0 or 1 returned by ``pw``.
+
+Data: ``--sets grid`` scikit-learn's and statsmodels' bundled sets of
+``benchmarks/small_data_sweep.py`` (both of its lists; sets under 200 rows are left out at 100
+training rows, under 400 at 300); ``--sets wide`` the R and econometrics sets of
+``benchmarks/wide_data_sweep.py`` (``pip install -e ".[sweep]"``). Base models: logistic
+regression and a linear SVM (margins) on standardised features, Gaussian naive Bayes, a random
+forest and gradient boosting.
+
+Run: ``nice python benchmarks/crossfit_sweep.py --sets grid`` (about ten minutes),
+``--sets wide`` (about half an hour), ``--seed K`` for another draw of the training rows,
+``--quick`` (breast cancer, two models: under a minute).
+"""
+
+from __future__ import annotations
+
+import copy
+import sys
+import time
+import warnings
+from pathlib import Path
+
+import numpy as np
+from sklearn.base import clone
+from sklearn.calibration import CalibratedClassifierCV
+from sklearn.ensemble import HistGradientBoostingClassifier, RandomForestClassifier
+from sklearn.linear_model import LogisticRegression
+from sklearn.model_selection import StratifiedKFold
+from sklearn.naive_bayes import GaussianNB
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+from sklearn.svm import LinearSVC
+
+sys.path.insert(0, str(Path(__file__).parent))
+import small_data_sweep as S  # noqa: E402
+
+from probwrap import CalibrationWrapper  # noqa: E402
+
+
+def base_models(quick: bool) -> dict:
+    models = {
+        "logistic": make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000)),
+        "naive_bayes": GaussianNB(),
+        "forest": RandomForestClassifier(n_estimators=100, random_state=0),
+        "boosting": HistGradientBoostingClassifier(max_iter=100, random_state=0),
+        "svm_margins": make_pipeline(StandardScaler(), LinearSVC()),
+    }
+    return {k: models[k] for k in ("logistic", "naive_bayes")} if quick else models
+
+
+def test_log_loss(p: np.ndarray, y: np.ndarray) -> float:
+    # scikit-learn's probabilities can be exactly 0: floored at 1e-15 for the loss only
+    return float(-np.mean(np.log(np.clip(p[np.arange(len(y)), y], 1e-15, 1.0))))
+
+
+def data(which: str, quick: bool):
+    if which == "wide":
+        import wide_data_sweep as W
+
+        yield from W.wide_data_sets(quick)
+        return
+    for name, X, y in [*S.data_sets(quick), *([] if quick else S.new_data_sets(False))]:
+        if quick and name != "breast_cancer":
+            continue
+        yield name, X, y
+
+
+def one_cell(model, X, y, tr, te, isotonic: bool) -> tuple[dict, dict]:
+    out, info = {}, {}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        t = time.perf_counter()
+        pw = CalibrationWrapper(clone(model)).fit(X[tr], y[tr])
+        out["pw"] = pw.predict_proba(X[te])
+        info["seconds_pw"] = time.perf_counter() - t
+        info["method"] = pw.method_
+        info["exact01"] = bool(np.any((out["pw"] == 0.0) | (out["pw"] == 1.0)))
+        # the proposal: the fitted map on each fold model, averaged
+        total = np.zeros_like(out["pw"])
+        for fit_rows, _ in StratifiedKFold(5).split(X[tr], y[tr]):
+            member = copy.copy(pw)
+            member.estimator_ = clone(model).fit(X[tr][fit_rows], y[tr][fit_rows])
+            total += member.predict_proba(X[te])
+        out["pw_folds"] = total / 5
+        for m in ("sigmoid", "temperature", *(("isotonic",) if isotonic else ())):
+            for ens in (True, False):
+                key = f"sk_{m}" + ("" if ens else "_refit")
+                t = time.perf_counter()
+                try:
+                    out[key] = CalibratedClassifierCV(clone(model), method=m, cv=5,
+                                                      ensemble=ens).fit(X[tr], y[tr]) \
+                        .predict_proba(X[te])
+                except ValueError as exc:  # e.g. a class with fewer rows than folds
+                    info[f"error_{key}"] = str(exc)[:80]
+                if key == "sk_sigmoid":
+                    info["seconds_sk"] = time.perf_counter() - t
+        if hasattr(model, "predict_proba"):
+            out["raw"] = clone(model).fit(X[tr], y[tr]).predict_proba(X[te])
+    return {k: test_log_loss(v, y[te]) for k, v in out.items()}, info
+
+
+def summary(cells: list) -> None:
+    def ratio(a, b, keep=lambda c: True):
+        return np.array([c["loss"][a] / c["loss"][b] for c in cells
+                         if a in c["loss"] and b in c["loss"] and keep(c)])
+
+    pairs = [("pw", "sk_sigmoid"), ("pw", "sk_temperature"), ("pw", "sk_sigmoid_refit"),
+             ("pw", "sk_temperature_refit"), ("pw", "raw"), ("pw_folds", "pw"),
+             ("pw_folds", "sk_sigmoid"), ("pw_folds", "sk_temperature"), ("pw_folds", "raw"),
+             ("sk_temperature", "sk_temperature_refit"), ("sk_sigmoid", "sk_sigmoid_refit")]
+    if any("sk_isotonic" in c["loss"] for c in cells):
+        pairs += [("pw", "sk_isotonic"), ("pw_folds", "sk_isotonic")]
+    for rows in sorted({c["rows"] for c in cells}) + [None]:
+        keep = (lambda c, r=rows: c["rows"] == r) if rows else (lambda c: True)
+        print(f"\n{'all cells' if rows is None else f'{rows} training rows'} "
+              f"({sum(map(keep, cells))} cells): test log loss ratio, geometric mean | worst | "
+              "best | cells above 1.05")
+        for a, b in pairs:
+            r = ratio(a, b, keep)
+            if r.size:
+                print(f"  {a:>14} / {b:<22} {np.exp(np.mean(np.log(r))):6.3f} | {r.max():6.3f} | "
+                      f"{r.min():6.3f} | {int(np.sum(r > 1.05))} of {r.size}")
+    worst = sorted(cells, key=lambda c: -c["loss"]["pw"] / min(
+        c["loss"].get(k, np.inf) for k in ("sk_sigmoid", "sk_temperature")))[:8]
+    print("\nworst cells of pw against the better of scikit-learn's sigmoid and temperature:")
+    for c in worst:
+        shown = {k: round(v, 3) for k, v in c["loss"].items()}
+        print(f"  {c['set']} | {c['model']} | {c['rows']} rows | auto chose {c['method']}: {shown}")
+    t = np.array([c["seconds_pw"] / c["seconds_sk"] for c in cells if c.get("seconds_sk")])
+    if t.size:
+        print(f"\nfit and predict time, pw / scikit-learn's sigmoid: geometric mean "
+              f"{np.exp(np.mean(np.log(t))):.2f}")
+    print(f"crashes: {sum(c.get('crash', 0) for c in cells)}; cells where pw returned a "
+          f"probability of exactly 0 or 1: {sum(c['exact01'] for c in cells)}")
+
+
+def main(argv: list[str]) -> None:
+    quick = "--quick" in argv
+    which = argv[argv.index("--sets") + 1] if "--sets" in argv else "grid"
+    seed = int(argv[argv.index("--seed") + 1]) if "--seed" in argv else 0
+    cells = []
+    for name, X, y in data(which, quick):
+        X = np.asarray(X, dtype=float)
+        _, yi = np.unique(np.asarray(y), return_inverse=True)
+        k = int(yi.max()) + 1
+        for n_train in (100,) if quick else (100, 300):
+            if len(yi) < n_train + 100:
+                continue
+            idx = np.random.default_rng(seed).permutation(len(yi))
+            tr, te = idx[:n_train], idx[n_train:][:3000]
+            if np.bincount(yi[tr], minlength=k).min() < 5:
+                continue  # fewer rows of a class than folds: scikit-learn refuses
+            for mname, model in base_models(quick).items():
+                try:
+                    loss, info = one_cell(model, X, yi, tr, te, "--isotonic" in argv)
+                except Exception as exc:  # noqa: BLE001 - counted and shown
+                    print(f"CRASH {name} | {mname} | {n_train}: {type(exc).__name__}: {exc}")
+                    cells.append({"set": name, "model": mname, "rows": n_train, "crash": 1,
+                                  "loss": {}, "exact01": False, "method": "-"})
+                    continue
+                cells.append({"set": name, "model": mname, "rows": n_train, "loss": loss,
+                              **info})
+                print(f"{name} | {mname} | {n_train} rows | {info['method']}: "
+                      + ", ".join(f"{a} {b:.4f}" for a, b in loss.items()), flush=True)
+    summary([c for c in cells if c["loss"]] + [c for c in cells if not c["loss"]])
+
+
+if __name__ == "__main__":
+    main(sys.argv[1:])
