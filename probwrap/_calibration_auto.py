@@ -90,7 +90,7 @@ _ORDER_BASED_NAMES = ("binning", "isotonic", "venn_abers")
 #: scores but applied to the model refitted on all rows, whose scores differ most where rows
 #: are few; a step map on the score scale carries that difference straight into its
 #: probabilities, while a smooth map shifts them little. Measured with
-#: benchmarks/crossfit_sweep.py at 100 and 300 training rows (550 cells of 54 bundled scikit-
+#: benchmarks/crossfit_sweep.py at 100 and 300 training rows (550 cells of 61 bundled scikit-
 #: learn, statsmodels, R and econometrics sets, five base models): geometric mean test log loss
 #: 0.3-0.8 % lower, cells more than 5 % above scikit-learn's ``CalibratedClassifierCV`` sigmoid
 #: 58 -> 45, worst cell against the old choice 1.11x (docs/small_data.md, twelfth session).
