@@ -19,7 +19,10 @@ Per cell (data set, base model, training rows) it records the test log loss of
 * scikit-learn's ``CalibratedClassifierCV(model, method=m, cv=5, ensemble=e)`` for ``m`` in
   sigmoid, temperature (and isotonic with ``--isotonic``) and ``e`` True (its default: one
   calibrator per fold model, averaged) and False (refit on all rows, as ``pw``);
-* ``raw``: the model fitted on all training rows, uncalibrated (models with ``predict_proba``).
+* ``raw``: the model fitted on all training rows, uncalibrated (models with ``predict_proba``);
+* with ``--methods``, ``pw_<name>``: ``CalibrationWrapper(model, method=<name>)`` for Platt,
+  temperature and beta scaling (two classes) or temperature and vector scaling (more), to see
+  what ``auto``'s choice among them costs on this path.
 
 It also counts crashes and probabilities of exactly 0 or 1 returned by ``pw``.
 
@@ -88,7 +91,7 @@ def data(which: str, quick: bool):
         yield name, X, y
 
 
-def one_cell(model, X, y, tr, te, isotonic: bool) -> tuple[dict, dict]:
+def one_cell(model, X, y, tr, te, isotonic: bool, methods: bool = False) -> tuple[dict, dict]:
     out, info = {}, {}
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -105,6 +108,12 @@ def one_cell(model, X, y, tr, te, isotonic: bool) -> tuple[dict, dict]:
             member.estimator_ = clone(model).fit(X[tr][fit_rows], y[tr][fit_rows])
             total += member.predict_proba(X[te])
         out["pw_folds"] = total / 5
+        if methods:  # probwrap's smooth maps by name, each cross-fitted as the default is
+            names = ("platt", "temperature", "beta") if out["pw"].shape[1] == 2 else (
+                "temperature", "vector_scaling")
+            for m in names:
+                out[f"pw_{m}"] = CalibrationWrapper(clone(model), method=m).fit(
+                    X[tr], y[tr]).predict_proba(X[te])
         for m in ("sigmoid", "temperature", *(("isotonic",) if isotonic else ())):
             for ens in (True, False):
                 key = f"sk_{m}" + ("" if ens else "_refit")
@@ -131,6 +140,9 @@ def summary(cells: list) -> None:
              ("pw", "sk_temperature_refit"), ("pw", "raw"), ("pw_folds", "pw"),
              ("pw_folds", "sk_sigmoid"), ("pw_folds", "sk_temperature"), ("pw_folds", "raw"),
              ("sk_temperature", "sk_temperature_refit"), ("sk_sigmoid", "sk_sigmoid_refit")]
+    for m in ("platt", "temperature", "beta", "vector_scaling"):
+        if any(f"pw_{m}" in c["loss"] for c in cells):
+            pairs += [(f"pw_{m}", "sk_sigmoid"), ("pw", f"pw_{m}")]
     if any("sk_isotonic" in c["loss"] for c in cells):
         pairs += [("pw", "sk_isotonic"), ("pw_folds", "sk_isotonic")]
     for rows in sorted({c["rows"] for c in cells}) + [None]:
@@ -175,7 +187,8 @@ def main(argv: list[str]) -> None:
                 continue  # fewer rows of a class than folds: scikit-learn refuses
             for mname, model in base_models(quick).items():
                 try:
-                    loss, info = one_cell(model, X, yi, tr, te, "--isotonic" in argv)
+                    loss, info = one_cell(model, X, yi, tr, te, "--isotonic" in argv,
+                                          "--methods" in argv)
                 except Exception as exc:  # noqa: BLE001 - counted and shown
                     print(f"CRASH {name} | {mname} | {n_train}: {type(exc).__name__}: {exc}")
                     cells.append({"set": name, "model": mname, "rows": n_train, "crash": 1,
