@@ -125,7 +125,11 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         parameters, Venn–Abers is preferred to isotonic regression. With fewer than 20 held-out
         rows in some class the order-based maps (binning, isotonic, Venn–Abers) are not
         eligible, and with fewer than 8, for a multiclass model, no one-vs-rest map is (Platt
-        and beta included); ``method_notes_`` says so.
+        and beta included); ``method_notes_`` says so. When the wrapper cross-fits its model
+        (not a ``FrozenEstimator``) on at most 300 rows, the order-based maps are not default
+        candidates either: the map is fitted on the fold models' scores and applied to the
+        model refitted on all rows, whose scores differ, and a step map passes that difference
+        into its probabilities (name them in ``candidates`` to score them).
     clip : float or None, default=None
         Only for the parametric maps (Platt, beta, temperature) fitted on ``predict_proba``
         output: log-odds are clipped to ``±logit(1 - clip)`` (log-probabilities floored at
