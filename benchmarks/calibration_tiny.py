@@ -209,6 +209,8 @@ def _replay(rec: dict, rule: dict) -> str:
     cv = rec["cv"]
     binary = rec["k"] == 2
     names = [nm for nm in cv["scored"] if nm != "identity" or rule.get("identity")]
+    if binary and rule.get("no_temperature"):
+        names = [nm for nm in names if nm != "temperature"] or names
     y = np.asarray(cv["y"])
     w = np.asarray(cv["w"])
     counts = np.bincount(y[w > 0])
@@ -231,8 +233,15 @@ def _replay(rec: dict, rule: dict) -> str:
     means = {nm: float(wn @ v) for nm, v in loss.items()}
     best = min(eligible, key=means.get)
     # simplicity order as in _simplicity_order
-    order = sorted(eligible, key=lambda nm: (CALIBRATION_METHODS[nm]().complexity,
-                                            nm != "venn_abers", names.index(nm)))
+    def _complexity(nm: str) -> float:
+        c = CALIBRATION_METHODS[nm]().complexity
+        if (binary and rule.get("platt_first") and nm == "platt"
+                and int(np.sum(w > 0)) >= rule.get("platt_first_min_rows", 0)):
+            c = CALIBRATION_METHODS["temperature"]().complexity - 0.5  # just before temperature
+        return c
+
+    order = sorted(eligible, key=lambda nm: (_complexity(nm), nm != "venn_abers",
+                                            names.index(nm)))
     smooth = [nm for nm in eligible if nm not in ORDER and nm != "identity"]
     step_margin = rule.get("step_margin", None)
     for nm in order:
@@ -281,6 +290,11 @@ RULES = {
     "order 20/class + guard 2 SE": {"order_min_class": 20, "identity_guard": 2.0},
     "order 12/class": {"order_min_class": 12},
     "order 25/class": {"order_min_class": 25},
+    "binary: Platt before temperature": {"platt_first": True},
+    "binary: no temperature": {"no_temperature": True},
+    "binary: Platt first from 60 rows": {"platt_first": True, "platt_first_min_rows": 60},
+    "binary: Platt first from 100 rows": {"platt_first": True, "platt_first_min_rows": 100},
+    "binary: Platt first from 200 rows": {"platt_first": True, "platt_first_min_rows": 200},
 }
 
 
@@ -291,7 +305,7 @@ def evaluate(recs: list[dict], rules: dict) -> None:
     print(f"replayed 'as auto is now' agrees with auto's own choice on {agree} of {len(recs)} draws")
     for label, rule in rules.items():
         cells = defaultdict(lambda: {"mine": [], "sk": defaultdict(list)})
-        harm, harm_n, chosen, vs_base = 0, 0, Counter(), []
+        harm, harm_n, chosen, vs_base, harm_size = 0, 0, Counter(), [], Counter()
         by_size = defaultdict(list)
         for r in recs:
             nm = replay(r, rule)
@@ -306,6 +320,7 @@ def evaluate(recs: list[dict], rules: dict) -> None:
             if r["own"] is not None:
                 harm_n += 1
                 harm += loss > 1.05 * r["own"]
+                harm_size[r["n_cal"]] += loss > 1.05 * r["own"]
                 vs_base.append(np.log(loss / r["own"]))
             by_size[r["n_cal"]].append(np.log(loss))
         ratios = {}
@@ -318,7 +333,8 @@ def evaluate(recs: list[dict], rules: dict) -> None:
             size_g[key[2]].append(v)
         print(f"{label:32s} gmean {B._gmean(list(ratios.values())):.4f} worst {ratios[worst]:.3f} "
               f"({worst[0][:24]}, {worst[1]}, {worst[2]}) >1.05 base: {harm}/{harm_n} "
-              f"(gmean vs base {np.exp(np.mean(vs_base)):.3f}) | "
+              f"(gmean vs base {np.exp(np.mean(vs_base)):.3f}; by rows "
+              + " ".join(f"{n}:{c}" for n, c in sorted(harm_size.items())) + ") | "
               + " ".join(f"{n}:{B._gmean(v):.3f}" for n, v in sorted(size_g.items()))
               + " | " + ", ".join(f"{m} {c}" for m, c in chosen.most_common()))
 

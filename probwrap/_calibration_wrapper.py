@@ -95,8 +95,10 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         ``"auto"``. ``"auto"`` scores
         every candidate map by cross-validated log loss on the held-out predictions and keeps the
         simplest map whose loss is within one standard error (of the paired per-row difference)
-        of the best one, so a richer map must win by more than its cross-validation noise. A
-        candidate whose fit reaches a boundary is not eligible, and with too few rows of a
+        of the best one, so a richer map must win by more than its cross-validation noise
+        (simplest first: temperature before Platt scaling, except that a binary model
+        cross-fitted here on 100 rows or more tries Platt scaling first, see
+        docs/calibration.md). A candidate whose fit reaches a boundary is not eligible, and with too few rows of a
         class to cross-validate ``"auto"`` warns and uses the most regularised map (Platt
         scaling for binary, temperature scaling for multiclass problems); see
         ``method_notes_``. A candidate whose fit fails in a fold is left out with a warning,

@@ -76,3 +76,73 @@ def test_the_rule_ends_above_its_row_bound():
         cw = CalibrationWrapper(LogisticRegression(), random_state=0).fit(X, y)
     assert "not eligible by default" not in cw.method_notes_.get("binning", "")
     assert "binning" in cw.method_scores_
+
+
+def _engel_draw():
+    """statsmodels' engel: food share of income in the top quarter, from income; 100 rows."""
+    import statsmodels.api as sm
+
+    d = sm.datasets.engel.load_pandas().data
+    share = (d["foodexp"] / d["income"]).to_numpy()
+    y = (share > np.quantile(share, 0.75)).astype(int)
+    X = d[["income"]].to_numpy(float)
+    idx = np.random.default_rng(0).permutation(len(y))
+    return X[idx[:100]], y[idx[:100]], X[idx[100:]], y[idx[100:]]
+
+
+def test_cross_fitted_binary_tries_platt_before_temperature(monkeypatch):
+    # One of benchmarks/crossfit_sweep.py's cells: naive Bayes needs a bias term, and
+    # temperature scaling (the scale alone) was kept by the one-standard-error rule. Reference:
+    # scikit-learn's CalibratedClassifierCV(method="sigmoid") on the same rows.
+    import probwrap._calibration_auto as auto
+
+    X, y, Xt, yt = _engel_draw()
+    assert auto._PLATT_FIRST_CROSSFIT_MIN_ROWS <= X.shape[0]
+    from sklearn.naive_bayes import GaussianNB
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        cw = CalibrationWrapper(GaussianNB(), random_state=0).fit(X, y)
+        sk = CalibratedClassifierCV(GaussianNB(), method="sigmoid", cv=5).fit(X, y)
+        monkeypatch.setattr(auto, "_PLATT_FIRST_CROSSFIT_MIN_ROWS", 10**9)
+        old = CalibrationWrapper(GaussianNB(), random_state=0).fit(X, y)
+    ours, ref = log_loss(yt, cw.predict_proba(Xt)), log_loss(yt, sk.predict_proba(Xt))
+    before = log_loss(yt, old.predict_proba(Xt))
+    assert cw.method_ == "platt" and old.method_ == "temperature"
+    # temperature is within one standard error of Platt on the folds, so the order decides
+    t_loss, t_se = cw.method_scores_["temperature"]
+    assert t_loss - cw.method_scores_["platt"][0] <= t_se
+    assert ours <= 1.05 * ref  # 0.560 against scikit-learn's 0.538
+    assert before > 1.10 * ref  # temperature scaling: 0.621
+
+
+def test_frozen_and_small_binary_sets_keep_temperature_first():
+    # the frozen path keeps the old order (benchmarks/calibration_tiny.py: Platt first there
+    # was worse on the fresh sets at 100-200 rows), and so do cross-fitted sets under the bound.
+    # In both draws Platt scores best and temperature scaling is within one standard error, so
+    # the order alone decides.
+    import statsmodels.api as sm
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.naive_bayes import GaussianNB
+
+    import probwrap._calibration_auto as auto
+
+    X, y = load_breast_cancer(return_X_y=True)
+    idx = np.random.default_rng(0).permutation(len(y))
+    d = sm.datasets.engel.load_pandas().data
+    share = (d["foodexp"] / d["income"]).to_numpy()
+    ye = (share > np.quantile(share, 0.75)).astype(int)
+    small = np.random.default_rng(4).permutation(len(ye))[:80]
+    assert small.shape[0] < auto._PLATT_FIRST_CROSSFIT_MIN_ROWS
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        frozen = CalibrationWrapper(
+            FrozenEstimator(_model().fit(X[idx[:100]], y[idx[:100]])), random_state=0
+        ).fit(X[idx[100:250]], y[idx[100:250]])
+        crossfit = CalibrationWrapper(GaussianNB(), random_state=0).fit(
+            d[["income"]].to_numpy(float)[small], ye[small])
+    for cw in (frozen, crossfit):
+        scores = cw.method_scores_
+        assert min(scores, key=lambda nm: scores[nm][0]) == "platt"
+        assert scores["temperature"][0] - scores["platt"][0] <= scores["temperature"][1]
+        assert cw.method_ == "temperature"
