@@ -33,6 +33,14 @@ training rows, under 400 at 300); ``--sets wide`` the R and econometrics sets of
 regression and a linear SVM (margins) on standardised features, Gaussian naive Bayes, a random
 forest and gradient boosting.
 
+``--only cost`` compares the cost rules the same way, on the binary sets (the minority class
+positive; a false alarm costs 1, a miss 3 or 10): the realised test cost per row of
+``CostPolicyWrapper(model, costs, strategy="tuned")``, of the plug-in rule on
+``CalibrationWrapper(model)`` (``pw_calibrated_bayes``), of scikit-learn's
+``TunedThresholdClassifierCV(model, scoring=cost, cv=5)``, of the plug-in cutoff on the model's
+own probabilities and of its ``predict``; linear SVM margins go through ``CalibrationWrapper``
+for probwrap's rules (a few minutes for ``--sets grid``).
+
 Run: ``nice python benchmarks/crossfit_sweep.py --sets grid`` (about ten minutes),
 ``--sets wide`` (about half an hour), ``--seed K`` for another draw of the training rows,
 ``--quick`` (breast cancer, two models: under a minute).
@@ -169,7 +177,110 @@ def summary(cells: list) -> None:
           f"probability of exactly 0 or 1: {sum(c['exact01'] for c in cells)}")
 
 
+COST_FN = (3.0, 10.0)  # cost of a missed positive; a false alarm costs 1
+
+
+def _minority_positive(y) -> np.ndarray | None:
+    """Binary tasks only: 1 for the minority class."""
+    _, yi = np.unique(np.asarray(y), return_inverse=True)
+    if yi.max() != 1:
+        return None
+    return (yi == 1).astype(int) if yi.mean() <= 0.5 else (yi == 0).astype(int)
+
+
+def cost_cell(model, X, y, tr, te, c_fn: float) -> dict:
+    """Realised test cost per row of each rule fitted on the training rows ``tr``."""
+    from sklearn.metrics import make_scorer
+    from sklearn.model_selection import TunedThresholdClassifierCV
+
+    from probwrap import CostPolicyWrapper
+
+    def realised(act) -> float:
+        act = np.asarray(act).astype(int)
+        return float(np.mean((act == 1) & (y[te] == 0)) + c_fn * np.mean((act == 0) & (y[te] == 1)))
+
+    costs = {"fp": 1.0, "fn": c_fn}
+    margins = not hasattr(model, "predict_proba")
+    # probwrap needs probabilities: margins go through the cross-fitted calibration
+    inner = CalibrationWrapper(clone(model)) if margins else clone(model)
+    out = {}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        out["pw_tuned"] = realised(CostPolicyWrapper(
+            clone(inner), costs=costs, strategy="tuned", random_state=0).fit(
+                X[tr], y[tr]).predict(X[te]))
+        cal = inner if margins else CalibrationWrapper(clone(model))
+        out["pw_calibrated_bayes"] = realised(CostPolicyWrapper(clone(cal), costs=costs).fit(
+            X[tr], y[tr]).predict(X[te]))
+        scorer = make_scorer(lambda yy, pp: -float(
+            np.mean((np.asarray(pp) == 1) & (np.asarray(yy) == 0))
+            + c_fn * np.mean((np.asarray(pp) == 0) & (np.asarray(yy) == 1))))
+        out["sk_tuned"] = realised(TunedThresholdClassifierCV(
+            clone(model), scoring=scorer, cv=5, random_state=0).fit(X[tr], y[tr]).predict(X[te]))
+        raw = clone(model).fit(X[tr], y[tr])
+        if not margins:
+            out["raw_bayes"] = realised(raw.predict_proba(X[te])[:, 1] > 1 / (1 + c_fn))
+        out["half"] = realised(raw.predict(X[te]))
+    return out
+
+
+def cost_main(argv: list[str]) -> None:
+    """``--only cost``: the cost rules cross-fitted beside ``TunedThresholdClassifierCV``."""
+    quick = "--quick" in argv
+    which = argv[argv.index("--sets") + 1] if "--sets" in argv else "grid"
+    seed = int(argv[argv.index("--seed") + 1]) if "--seed" in argv else 0
+    cells = []
+    for name, X, y in data(which, quick):
+        y = _minority_positive(y)
+        if y is None:
+            continue
+        X = np.asarray(X, dtype=float)
+        for n_train in (100,) if quick else (100, 300):
+            if len(y) < n_train + 100:
+                continue
+            idx = np.random.default_rng(seed).permutation(len(y))
+            tr, te = idx[:n_train], idx[n_train:][:3000]
+            if np.bincount(y[tr], minlength=2).min() < 5:
+                continue
+            for mname, model in base_models(quick).items():
+                for c_fn in COST_FN:
+                    try:
+                        loss = cost_cell(model, X, y, tr, te, c_fn)
+                    except Exception as exc:  # noqa: BLE001 - counted and shown
+                        print(f"CRASH {name} | {mname} | {n_train} | {c_fn}: "
+                              f"{type(exc).__name__}: {exc}")
+                        continue
+                    cells.append({"set": name, "model": mname, "rows": n_train, "c_fn": c_fn,
+                                  "loss": loss})
+                    print(f"{name} | {mname} | {n_train} rows | c_fn {c_fn:g}: "
+                          + ", ".join(f"{a} {b:.4f}" for a, b in loss.items()), flush=True)
+    pairs = [("pw_tuned", "sk_tuned"), ("pw_calibrated_bayes", "sk_tuned"),
+             ("pw_tuned", "pw_calibrated_bayes"), ("pw_tuned", "raw_bayes"),
+             ("sk_tuned", "raw_bayes"), ("pw_tuned", "half"), ("sk_tuned", "half")]
+    floor = 1e-3  # a cell whose both costs are ~0 says nothing about the ratio
+    for rows in sorted({c["rows"] for c in cells}) + [None]:
+        keep = [c for c in cells if rows is None or c["rows"] == rows]
+        print(f"\n{'all cells' if rows is None else f'{rows} training rows'} ({len(keep)} "
+              "cells): realised test cost ratio, geometric mean | worst | best | cells above "
+              "1.10")
+        for a, b in pairs:
+            r = np.array([(c["loss"][a] + floor) / (c["loss"][b] + floor) for c in keep
+                          if a in c["loss"] and b in c["loss"]])
+            if r.size:
+                print(f"  {a:>20} / {b:<20} {np.exp(np.mean(np.log(r))):6.3f} | {r.max():6.3f} "
+                      f"| {r.min():6.3f} | {int(np.sum(r > 1.10))} of {r.size}")
+    worst = sorted(cells, key=lambda c: -(c["loss"]["pw_tuned"] + floor)
+                   / (c["loss"]["sk_tuned"] + floor))[:8]
+    print("\nworst cells of pw_tuned against scikit-learn's TunedThresholdClassifierCV:")
+    for c in worst:
+        print(f"  {c['set']} | {c['model']} | {c['rows']} rows | c_fn {c['c_fn']:g}: "
+              + ", ".join(f"{k} {v:.4f}" for k, v in c["loss"].items()))
+
+
 def main(argv: list[str]) -> None:
+    if "--only" in argv and argv[argv.index("--only") + 1] == "cost":
+        cost_main(argv)
+        return
     quick = "--quick" in argv
     which = argv[argv.index("--sets") + 1] if "--sets" in argv else "grid"
     seed = int(argv[argv.index("--seed") + 1]) if "--seed" in argv else 0

@@ -80,7 +80,10 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         out-of-fold predictions of all folds pooled (an exact search over every distinct held-out
         probability), settled toward the plug-in cutoff where the held-out rows do not show it
         costs more (:func:`probwrap.decision.settle_cutoff`; the plain minimiser is
-        ``cost_curve_.cutoff``); otherwise per-class offsets on the log-probability scale fitted
+        ``cost_curve_.cutoff``). With at most 20,000 held-out rows in memory, that plug-in
+        cutoff is first carried back through a calibration map chosen on the held-out rows
+        (the model's own probabilities unless a map fits them better by more than a standard
+        error; ``cutoff_anchor_``); otherwise per-class offsets on the log-probability scale fitted
         the same way. ``"fixed"``: use ``cutoff`` as given, so that a search can tune it.
     cutoff : float or array-like of shape (n_classes,), default=None
         With ``strategy="fixed"``: the probability cutoff (binary: the second action is taken when
@@ -147,6 +150,15 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
     cost_curve_ : CutoffSearchResult or None
         ``"tuned"`` binary cutoff: held-out cost at every distinct cutoff and the optimum (beyond
         20,000 held-out rows at about 4,097 of them unless ``keep_heldout=True``).
+    cutoff_anchor_ : float or None
+        ``"tuned"`` binary cutoff without ``guarantee`` (None otherwise): the cutoff kept unless the held-out rows
+        show that the least-cost cutoff costs less — the probability ``p`` at which the
+        calibration map chosen on the held-out rows reaches the plug-in cutoff
+        ``(c_fp - c_tn) / ((c_fp - c_tn) + (c_fn - c_tp))``, or that plug-in cutoff itself.
+    cutoff_anchor_map_ : str or None
+        The map behind ``cutoff_anchor_`` (``"identity"``: the model's own probabilities, so the
+        plain plug-in cutoff); None when none was fitted (more than 20,000 held-out rows,
+        tallied Dask input, or a map that is not non-decreasing).
     action_budget_ : ActionBudget or None
         Fitted capacity limit for the non-cutoff cases.
     heldout_cost_ : float or None
@@ -159,8 +171,8 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         ``"tuned"`` binary cutoff: bootstrap interval of the least-cost cutoff
         (``cost_curve_.cutoff``) and its spread across folds, computed on first access. None
         otherwise. It describes where the least-cost cutoff lies; ``cutoff_`` can lie outside it
-        when the held-out rows do not show the least-cost cutoff to cost less than the plug-in
-        cutoff (see ``strategy``), which is then kept.
+        when the held-out rows do not show the least-cost cutoff to cost less than
+        ``cutoff_anchor_`` (see ``strategy``), which is then kept.
 
     Examples
     --------
@@ -375,6 +387,8 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         self.guarantee_ = None
         self.class_offsets_ = None
         self.cost_curve_ = None
+        self.cutoff_anchor_ = None
+        self.cutoff_anchor_map_ = None
         self.action_budget_ = None
         self.heldout_cost_ = None
         self._interval_inputs = None
@@ -496,6 +510,8 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         self._cutoff_mode = False
         self.cutoff_ = None
         self.cost_curve_ = None
+        self.cutoff_anchor_ = None
+        self.cutoff_anchor_map_ = None
         self.action_budget_ = None
         self._interval_inputs = None
         self._interval_cache = None

@@ -13,6 +13,7 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
+from sklearn.base import BaseEstimator, ClassifierMixin
 
 from ._cost_policy_summary import CURVE_POINTS, SMALL_HELDOUT_ROWS, _heldout_summary
 from ._validation import plain
@@ -33,6 +34,92 @@ from .decision import (
 from .decision._cutoff import _search_cutoff
 
 __all__: list[str] = []
+
+#: ``strategy="tuned"`` (binary, in memory) settles its cutoff toward the plug-in cutoff carried
+#: back through a calibration map fitted on the held-out rows (:func:`_recalibrated_plugin`) when
+#: at most this many held-out rows have weight > 0; above, toward the plug-in cutoff itself
+#: (there the one-sided test has the power to move to the least-cost cutoff wherever the plug-in
+#: cutoff costs measurably more, and the extra fit would cost about one sort of the rows).
+RECALIBRATED_ANCHOR_MAX_ROWS = SMALL_HELDOUT_ROWS
+
+#: The maps scored for that anchor: the model's own probabilities first (kept unless a map beats
+#: them by more than one standard error of cross-validated log loss), then ``auto``'s binary
+#: candidates (Venn-Abers only below 1,000 rows, as in ``auto``).
+_ANCHOR_CANDIDATES = ("identity", "temperature", "platt", "beta", "binning", "isotonic")
+
+
+class _HeldOutProbability(ClassifierMixin, BaseEstimator):
+    """A fitted binary "model" whose probability of class 1 is the first column of ``X``: lets
+    ``CalibrationWrapper(method="auto")`` choose a map for probabilities already computed."""
+
+    def fit(self, X: Any = None, y: Any = None) -> _HeldOutProbability:
+        self.classes_ = np.array([0, 1])
+        self.n_features_in_ = 1
+        return self
+
+    def predict_proba(self, X: Any) -> np.ndarray:
+        q = np.asarray(X, dtype=float)[:, 0]
+        return np.column_stack([1.0 - q, q])
+
+    def predict(self, X: Any) -> np.ndarray:
+        return (np.asarray(X, dtype=float)[:, 0] > 0.5).astype(int)
+
+
+def _recalibrated_plugin(p, y, w, t0: float, random_state: Any) -> tuple[float, str | None]:
+    """The plug-in cutoff ``t0`` carried back to the scale of the held-out probabilities ``p``
+    through the map ``CalibrationWrapper(method="auto")`` chooses for them on the same rows (the
+    model's own probabilities among the candidates, first): the cutoff ``c`` with
+    ``map(p) > t0`` exactly where ``p > c``. Returns ``(c, map name)``; ``(t0, None)`` above
+    ``RECALIBRATED_ANCHOR_MAX_ROWS`` rows, when a map cannot be fitted, or when the fitted map
+    is not non-decreasing (then no single cutoff on ``p`` reproduces it).
+
+    The plain plug-in cutoff trusts the model's probabilities; on a few hundred held-out rows
+    the one-sided test of :func:`~probwrap.decision.settle_cutoff` seldom rejects it even where
+    the model is plainly miscalibrated (naive Bayes, forests, boosting), so the tuned cutoff
+    stayed at a cutoff the rows could have corrected (benchmarks/crossfit_sweep.py
+    ``--only cost``; docs/decisions.md)."""
+    import warnings
+
+    from sklearn.frozen import FrozenEstimator
+
+    from ._calibration_wrapper import CalibrationWrapper
+
+    keep = w > 0
+    n = int(np.count_nonzero(keep))
+    if n > RECALIBRATED_ANCHOR_MAX_ROWS or np.unique(y[keep]).shape[0] < 2:
+        return t0, None
+    names = list(_ANCHOR_CANDIDATES) + (["venn_abers"] if n < 1_000 else [])
+    try:
+        with warnings.catch_warnings():
+            # the anchor only decides which cutoff is kept while the rows cannot tell; the
+            # map's own notes (few rows of a class, a fallback) are not the user's concern here
+            warnings.simplefilter("ignore")
+            cw = CalibrationWrapper(
+                FrozenEstimator(_HeldOutProbability().fit()), method="auto", candidates=names,
+                random_state=random_state,
+            ).fit(p[keep, None], y[keep], sample_weight=w[keep])
+            u = np.unique(p[keep])
+            q = cw.predict_proba(u[:, None])[:, 1]
+    except ValueError:
+        return t0, None
+    if cw.method_ == "identity":
+        return t0, "identity"
+    if np.any(np.diff(q) < -1e-12):
+        return t0, None
+    j = int(np.searchsorted(q, t0, side="right"))  # first distinct held-out value mapped above t0
+    lo_p = u[j - 1] if j > 0 else 0.0
+    hi_p = u[j] if j < u.shape[0] else 1.0
+    # refine between the two neighbours on the log-odds scale (the maps' own scale)
+    tiny = 1e-15
+    lo = np.log(max(lo_p, tiny)) - np.log1p(-min(lo_p, 1 - tiny)) if lo_p > 0 else np.log(tiny) - 20
+    hi = np.log(max(hi_p, tiny)) - np.log1p(-min(hi_p, 1 - tiny)) if hi_p < 1 else -np.log(tiny) + 20
+    grid = 1.0 / (1.0 + np.exp(-np.linspace(lo, hi, 65)))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        qg = cw.predict_proba(grid[:, None])[:, 1]
+    below = np.flatnonzero(qg <= t0)
+    c = float(grid[below[-1]]) if below.size else float(lo_p)
+    return float(min(max(c, lo_p), hi_p)), cw.method_
 
 
 class _RuleFitting:
@@ -132,8 +219,14 @@ class _RuleFitting:
                 p, ho.y_index, matrix, ho.sample_weight, share, (0.0, 1.0),
                 max_points=None if keep else CURVE_POINTS,
             )
+            anchor, self.cutoff_anchor_map_ = plugin_cutoff(matrix), None
+            if not getattr(ho, "from_tally", False):
+                anchor, self.cutoff_anchor_map_ = _recalibrated_plugin(
+                    p, ho.y_index, ho.sample_weight, plugin_cutoff(matrix), self.random_state
+                )
+            self.cutoff_anchor_ = float(anchor)
             self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res,
-                                         sample_weight=ho.sample_weight).cutoff
+                                         sample_weight=ho.sample_weight, anchor=anchor).cutoff
             if getattr(ho, "from_tally", False) and ho.response == "predict_proba":
                 self.cutoff_ = _cutoff_at_bin_edge(self.tally_, self.cutoff_)
             self.cost_curve_ = res

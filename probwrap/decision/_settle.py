@@ -31,21 +31,24 @@ class SettledCutoff:
     Attributes
     ----------
     cutoff : float
-        The chosen cutoff: ``plugin`` when the held-out rows do not show that it costs more than
-        the least-cost cutoff, otherwise the cutoff nearest ``plugin`` among those not shown to
+        The chosen cutoff: ``anchor`` when the held-out rows do not show that it costs more than
+        the least-cost cutoff, otherwise the cutoff nearest ``anchor`` among those not shown to
         cost more.
     plugin : float
         The plug-in (Bayes) cutoff of the cost matrix.
     least_cost : float
         The cutoff of least held-out cost (``search.cutoff``).
     kept_plugin : bool
-        Whether ``cutoff`` is the plug-in cutoff.
+        Whether ``cutoff`` is ``anchor`` (the plug-in cutoff unless another anchor was given).
     excess : float
-        Held-out mean cost per row of the plug-in cutoff minus that of the least-cost cutoff.
+        Held-out mean cost per row of ``anchor`` minus that of the least-cost cutoff.
     excess_se : float
         Standard error of ``excess`` (paired over rows, on Kish's effective sample size).
     level : float
         One-sided level of the test.
+    anchor : float or None
+        The cutoff kept unless the rows reject it, when it is not ``plugin`` (see the
+        ``anchor`` argument of :func:`settle_cutoff`); None means ``plugin``.
     """
 
     cutoff: float
@@ -55,6 +58,17 @@ class SettledCutoff:
     excess: float
     excess_se: float
     level: float
+    anchor: float | None = None
+
+
+def _check_anchor(anchor: Any) -> float:
+    try:
+        value = float(anchor)
+    except (TypeError, ValueError):
+        value = float("nan")
+    if not 0.0 <= value <= 1.0:
+        raise ValueError(f"`anchor` must be a probability cutoff in [0, 1]; got {anchor!r}.")
+    return value
 
 
 def _check_level(level: Any) -> float:
@@ -75,6 +89,7 @@ def settle_cutoff(
     *,
     sample_weight: Any = None,
     level: float = 0.05,
+    anchor: float | None = None,
 ) -> SettledCutoff:
     """The plug-in cutoff unless held-out rows show that another cutoff costs less.
 
@@ -107,6 +122,11 @@ def settle_cutoff(
     level : float in (0, 0.5), default=0.05
         One-sided level at which the held-out rows must show that a cutoff costs more than the
         minimum for it to be passed over.
+    anchor : float in [0, 1], default=None
+        The cutoff to keep unless the rows reject it, in place of the plug-in cutoff: for
+        example the plug-in cutoff carried back through a calibration map fitted on the same
+        rows (what ``CostPolicyWrapper(strategy="tuned")`` passes, see
+        :class:`~probwrap.CostPolicyWrapper`). None: the plug-in cutoff.
 
     Returns
     -------
@@ -141,7 +161,9 @@ def settle_cutoff(
     w = np.ones(n) if sample_weight is None else check_sample_weight(sample_weight, n)
     if search is None:
         search = search_cutoff(s, yi, matrix, sample_weight=w, score_bounds=(0.0, 1.0))
-    t0 = plugin_cutoff(matrix)
+    t_plug = plugin_cutoff(matrix)
+    t0 = t_plug if anchor is None else _check_anchor(anchor)
+    kept_anchor = None if anchor is None else float(t0)
     # costs divided by a power of two near the largest (exact): squares of costs near the
     # largest float would overflow; excess and its error are scaled back at the end
     top = float(np.max(np.abs(matrix)))
@@ -187,15 +209,15 @@ def settle_cutoff(
     tol = 1e-9 * max(abs(a0), abs(a1))
     cap = search.capacity
     if ex_t <= z * se_t + tol and (cap is None or f0_t + f1_t <= cap + 1e-12):
-        return SettledCutoff(float(t0), float(t0), float(search.cutoff), True,
-                             float(scale * ex_t), float(scale * se_t), level)
+        return SettledCutoff(float(t0), float(t_plug), float(search.cutoff), True,
+                             float(scale * ex_t), float(scale * se_t), level, kept_anchor)
     ex, se = excess_and_se(f0, f1, base + a0 * f0 + a1 * f1)
     ok = admissible & (ex <= z * se + tol)
     ok[best] = True
     cands = np.flatnonzero(ok)
     chosen = float(cutoffs[cands[np.argmin(np.abs(cutoffs[cands] - t0))]])
-    return SettledCutoff(chosen, float(t0), float(search.cutoff), False, float(scale * ex_t),
-                         float(scale * se_t), level)
+    return SettledCutoff(chosen, float(t_plug), float(search.cutoff), False,
+                         float(scale * ex_t), float(scale * se_t), level, kept_anchor)
 
 
 @dataclass(frozen=True)
