@@ -36,7 +36,8 @@ from .decision._cutoff import _search_cutoff
 __all__: list[str] = []
 
 #: ``strategy="tuned"`` (binary, in memory) settles its cutoff toward the plug-in cutoff carried
-#: back through a calibration map fitted on the held-out rows (:func:`_recalibrated_plugin`) when
+#: back through a calibration map fitted on the held-out rows
+#: (:func:`recalibrated_plugin_cutoff`) when
 #: at most this many held-out rows have weight > 0; above, toward the plug-in cutoff itself
 #: (there the one-sided test has the power to move to the least-cost cutoff wherever the plug-in
 #: cutoff costs measurably more, and the extra fit would cost about one sort of the rows).
@@ -65,13 +66,14 @@ class _HeldOutProbability(ClassifierMixin, BaseEstimator):
         return (np.asarray(X, dtype=float)[:, 0] > 0.5).astype(int)
 
 
-def _recalibrated_plugin(p, y, w, t0: float, random_state: Any) -> tuple[float, str | None]:
+def recalibrated_plugin_cutoff(p, y, w, t0: float, random_state: Any) -> tuple[float, str | None]:
     """The plug-in cutoff ``t0`` carried back to the scale of the held-out probabilities ``p``
     through the map ``CalibrationWrapper(method="auto")`` chooses for them on the same rows (the
     model's own probabilities among the candidates, first): the cutoff ``c`` with
     ``map(p) > t0`` exactly where ``p > c``. Returns ``(c, map name)``; ``(t0, None)`` above
     ``RECALIBRATED_ANCHOR_MAX_ROWS`` rows, when a map cannot be fitted, or when the fitted map
-    is not non-decreasing (then no single cutoff on ``p`` reproduces it).
+    is not non-decreasing (then no single cutoff on ``p`` reproduces it). ``random_state``
+    seeds the folds that score the maps (None: seed 0, so that the result is reproducible).
 
     The plain plug-in cutoff trusts the model's probabilities; on a few hundred held-out rows
     the one-sided test of :func:`~probwrap.decision.settle_cutoff` seldom rejects it even where
@@ -96,7 +98,9 @@ def _recalibrated_plugin(p, y, w, t0: float, random_state: Any) -> tuple[float, 
             warnings.simplefilter("ignore")
             cw = CalibrationWrapper(
                 FrozenEstimator(_HeldOutProbability().fit()), method="auto", candidates=names,
-                random_state=random_state,
+                # seeded even when random_state is None: a frozen model's tuned cutoff, which
+                # used no random numbers before, stays reproducible
+                random_state=0 if random_state is None else random_state,
             ).fit(p[keep, None], y[keep], sample_weight=w[keep])
             u = np.unique(p[keep])
             q = cw.predict_proba(u[:, None])[:, 1]
@@ -221,7 +225,7 @@ class _RuleFitting:
             )
             anchor, self.cutoff_anchor_map_ = plugin_cutoff(matrix), None
             if not getattr(ho, "from_tally", False):
-                anchor, self.cutoff_anchor_map_ = _recalibrated_plugin(
+                anchor, self.cutoff_anchor_map_ = recalibrated_plugin_cutoff(
                     p, ho.y_index, ho.sample_weight, plugin_cutoff(matrix), self.random_state
                 )
             self.cutoff_anchor_ = float(anchor)

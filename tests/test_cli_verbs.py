@@ -151,10 +151,21 @@ def test_cutoff_equals_the_library(files, capsys, capacity):
     realised = np.where(act, np.where(y == 1, 0.0, 3.0), np.where(y == 1, 40.0, 0.0)).mean()
     assert got["expected_cost"] == pytest.approx(realised, rel=1e-12)
     assert got["bayes_cutoff"] == pytest.approx(3 / 43)
-    # the cutoff CostPolicyWrapper(strategy="tuned") keeps on the same rows
-    from probwrap.decision import settle_cutoff
+    # the cutoff CostPolicyWrapper(strategy="tuned") keeps on the same rows (the CLI's --seed
+    # defaults to 0): a frozen "model" whose probabilities are the file's scores
+    from sklearn.frozen import FrozenEstimator
 
-    assert got["settled_cutoff"]["cutoff"] == settle_cutoff(p, y, COSTS, res).cutoff
+    from probwrap import CostPolicyWrapper
+    from probwrap._cost_policy_rules import _HeldOutProbability
+
+    pol = CostPolicyWrapper(FrozenEstimator(_HeldOutProbability().fit()), costs=COSTS,
+                            strategy="tuned", capacity=capacity,
+                            random_state=0).fit(p[:, None], y)
+    kept = got["settled_cutoff"]
+    assert kept["cutoff"] == pol.cutoff_
+    assert kept["recalibrated_bayes_cutoff"] == pol.cutoff_anchor_
+    assert kept["recalibration"] == pol.cutoff_anchor_map_
+    assert kept["is_bayes_cutoff"] == (pol.cutoff_ == 3 / 43)
 
 
 def test_cutoff_text_output(files, capsys):
@@ -354,8 +365,13 @@ def test_report_summary_names_the_recommended_cutoff(tmp_path, capsys):
     code, out, err = run(capsys, *args, "--format", "json")
     assert code == 0, err
     got = json.loads(out)
-    ref = settle_cutoff(p, y, {"fp": 1.0, "fn": 4.0})
+    # the report's own content on the same rows: settled toward its recalibrated Bayes cutoff
+    from probwrap.report import build_report
+
+    content, _ = build_report(y_true=y, y_prob=p, costs={"fp": 1.0, "fn": 4.0}, n_resamples=10)
+    ref = settle_cutoff(p, y, {"fp": 1.0, "fn": 4.0}, anchor=content.anchor)
     assert got["cutoff"] == ref.least_cost and got["recommended_cutoff"] == ref.cutoff
+    assert ref.cutoff != ref.least_cost
     code, out, err = run(capsys, *args)
     assert f"recommended cutoff {ref.cutoff:.4f}" in out and f"{ref.least_cost:.4f}" in out
 

@@ -140,13 +140,27 @@ def test_score_file_recommendation_is_the_tuned_policys_settled_cutoff(seed):
     p, y = _miscalibrated(seed)
     costs = {"fp": 1.0, "fn": 4.0}
     content, page = build_report(y_true=y, y_prob=p, costs=costs, n_resamples=10)
-    ref = settle_cutoff(p, y, costs)
+    # the policy settles toward the Bayes cutoff carried back through the map chosen on the
+    # rows: p > anchor flags exactly the rows whose recalibrated probability exceeds 1/5
+    from sklearn.frozen import FrozenEstimator
+
+    from probwrap import CalibrationWrapper
+    from probwrap._cost_policy_rules import _HeldOutProbability
+
+    if content.anchor_map in (None, "identity"):
+        assert content.anchor == pytest.approx(0.2)
+    else:
+        cal = CalibrationWrapper(FrozenEstimator(_HeldOutProbability().fit()),
+                                 method=content.anchor_map).fit(p[:, None], y)
+        q = cal.predict_proba(p[:, None])[:, 1]
+        np.testing.assert_array_equal(p > content.anchor, q > 0.2)
+    ref = settle_cutoff(p, y, costs, anchor=content.anchor)
     r = content.recommendation
     assert r.cutoff == ref.cutoff
     if ref.kept_plugin:
-        assert r.key == "plugin"
+        assert r.key == ("plugin" if content.anchor == ref.plugin else "recalibrated")
     elif ref.cutoff != content.chosen_cutoff:
-        assert r.key == "settled" and ref.plugin < ref.cutoff or ref.cutoff < ref.plugin
+        assert r.key == "settled"
         assert re.search(r'<tr data-rule="settled" class="pw-recommended">', page)
     assert "settle_cutoff" in " ".join(r.reasons)
     realised = MATRIX_14[y, (p > r.cutoff).astype(int)].mean()
@@ -154,3 +168,20 @@ def test_score_file_recommendation_is_the_tuned_policys_settled_cutoff(seed):
 
 
 MATRIX_14 = np.array([[0.0, 1.0], [4.0, 0.0]])
+
+
+@pytest.mark.parametrize("seed", [0, 3, 11])
+def test_report_and_cutoff_command_recommend_the_same_cutoff(seed):
+    # both settle toward the Bayes cutoff carried back through the map chosen on the file's
+    # rows; an int random_state seeds that map's folds as `probwrap cutoff --seed` does
+    from probwrap.cli._cutoff import cutoff_summary
+
+    p, y = _miscalibrated(seed)
+    costs = {"fp": 1.0, "fn": 4.0}
+    for s in (0, 5):
+        content, _ = build_report(y_true=y, y_prob=p, costs=costs, n_resamples=10,
+                                  random_state=s)
+        kept = cutoff_summary(p, y, costs, n_resamples=10, seed=s)["settled_cutoff"]
+        assert content.recommendation.cutoff == kept["cutoff"]
+        assert content.anchor == kept["recalibrated_bayes_cutoff"]
+        assert content.anchor_map == kept["recalibration"]

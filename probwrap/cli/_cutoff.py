@@ -184,14 +184,22 @@ def cutoff_summary(
             out[name] = None if over else mean_cost(matrix[y, action])
         out["settled_cutoff"] = None
         if bayes is not None:
+            from probwrap._cost_policy_rules import recalibrated_plugin_cutoff
             from probwrap.decision import settle_cutoff
 
-            settled = settle_cutoff(scores, y, matrix, res, sample_weight=sample_weight)
+            # the tuned policy's anchor: the Bayes cutoff carried back through the calibration
+            # map chosen on these rows (the scores' own probabilities tried first)
+            anchor, amap = recalibrated_plugin_cutoff(scores, y, w, bayes, seed)
+            settled = settle_cutoff(scores, y, matrix, res, sample_weight=sample_weight,
+                                    anchor=anchor)
             out["settled_cutoff"] = {
                 "cutoff": settled.cutoff,
                 "expected_cost": mean_cost(
                     matrix[y, (scores > settled.cutoff).astype(np.intp)]),
-                "is_bayes_cutoff": settled.kept_plugin,
+                "is_bayes_cutoff": bool(settled.cutoff == bayes),
+                "recalibrated_bayes_cutoff": float(anchor),
+                "recalibration": amap,
+                "kept_recalibrated_bayes_cutoff": bool(settled.kept_plugin),
             }
     if guarantee is not None:
         from probwrap.decision import guaranteed_cutoff
@@ -266,9 +274,13 @@ def _text(out: dict[str, Any], path: str) -> str:
             )
         kept = out.get("settled_cutoff")
         if kept is not None:
-            why = ("the Bayes cutoff: these rows do not show at 5 % that another costs less"
-                   if kept["is_bayes_cutoff"] else
-                   "nearest the Bayes cutoff among those not shown at 5 % to cost more")
+            recal = kept.get("recalibration") not in (None, "identity")
+            target = (f"the Bayes cutoff after {kept['recalibration']} recalibration on these "
+                      f"rows ({kept['recalibrated_bayes_cutoff']:.4g})" if recal else
+                      "the Bayes cutoff")
+            why = (f"{target}: these rows do not show at 5 % that another costs less"
+                   if kept["kept_recalibrated_bayes_cutoff"] else
+                   f"nearest {target} among those not shown at 5 % to cost more")
             lines.append(
                 f"  kept by CostPolicyWrapper {kept['cutoff']:.6g}   cost {kept['expected_cost']:.6g}"
                 f"   ({why})"

@@ -14,8 +14,8 @@ from ..shift import shift_cutoff
 from ._common import Recommendation
 
 __all__ = ["RuleRow", "BAYES_NAME", "HALF_NAME", "HINDSIGHT_NAME", "CAPACITY_NAME",
-           "CHOSEN_NAMES", "POLICY_SOURCES", "SETTLED_NAME", "rule_row", "cost_scale",
-           "ScaledCosts", "target_columns", "recommend", "flagged_share"]
+           "CHOSEN_NAMES", "POLICY_SOURCES", "SETTLED_NAME", "RECALIBRATED_NAME", "rule_row",
+           "cost_scale", "ScaledCosts", "target_columns", "recommend", "flagged_share"]
 
 
 @dataclass
@@ -42,6 +42,11 @@ CAPACITY_NAME = "capacity cutoff"
 # a score file's recommendation when the Bayes cutoff is rejected but the least-cost cutoff is
 # not the nearest one the rows allow (decision.settle_cutoff)
 SETTLED_NAME = "settled cutoff (nearest the Bayes cutoff not shown to cost more)"
+# the Bayes cutoff carried back through a calibration map fitted on the same rows (the cutoff a
+# tuned policy settles toward when a map fits the rows better than the scores themselves)
+RECALIBRATED_NAME = "recalibrated Bayes cutoff"
+SETTLED_RECALIBRATED_NAME = ("settled cutoff (nearest the recalibrated Bayes cutoff not shown to "
+                             "cost more)")
 CHOSEN_NAMES = {
     "tuned": "tuned cutoff",
     "bayes": "Bayes cutoff of the fitted policy",
@@ -149,26 +154,43 @@ def recommend(content, y01, p, w, q, E, notes) -> None:
                 f"the {BAYES_NAME} (standard error {se:.2g})")
         settled = getattr(content, "settled", None)
         if searched_here and settled is not None:
-            # one rule with CostPolicyWrapper(strategy="tuned"): decision.settle_cutoff
+            # one rule with CostPolicyWrapper(strategy="tuned"): decision.settle_cutoff, toward
+            # the Bayes cutoff carried back through the map chosen on these rows
+            anchor_map = getattr(content, "anchor_map", None)
+            recal = (anchor_map not in (None, "identity") and settled.anchor is not None
+                     and settled.anchor != content.plugin)
+            ref_key, ref_name, ref_cut = (("recalibrated", RECALIBRATED_NAME, settled.anchor)
+                                          if recal else ("plugin", BAYES_NAME, content.plugin))
+            if recal:
+                diff = _paired_difference(y01, p, content.sample_weight, matrix,
+                                          content.chosen_cutoff, ref_cut)[0]
             said = (f"on the labelled rows the {chosen.label} costs {diff:+.4g} per row against "
-                    f"the {BAYES_NAME} (standard error {settled.excess_se:.2g})")
+                    f"the {ref_name} (standard error {settled.excess_se:.2g})")
             test = (f"a one-sided paired test at the {100 * settled.level:g}% level, the rule "
                     "of the tuned cost policy (probwrap.decision.settle_cutoff)")
+            what = (f"The {RECALIBRATED_NAME} ({ref_cut:.4g}) is the score at which a "
+                    f"{anchor_map} map fitted on these rows reaches the {BAYES_NAME} "
+                    f"({content.plugin:.4g}): these rows show the scores to be miscalibrated. "
+                    if recal else "")
             if settled.kept_plugin:
-                key, name, cutoff = "plugin", BAYES_NAME, content.plugin
-                reasons.append(f"The {BAYES_NAME} needs no search and {said}. By {test}, these "
-                               f"rows do not show that the {BAYES_NAME} costs more, so it is "
-                               "kept: the search on these same rows adds nothing reliable.")
+                key, name, cutoff = ref_key, ref_name, float(ref_cut)
+                reasons.append(f"{what}The {ref_name} needs no search and {said}. By {test}, "
+                               f"these rows do not show that the {ref_name} costs more, so it "
+                               "is kept: the search on these same rows adds nothing reliable.")
+                if recal and key not in rows:
+                    content.rules.insert(1, rule_row(key, name, cutoff, y01, p, matrix,
+                                                     content.sample_weight, cap))
             elif settled.cutoff == content.chosen_cutoff:
-                reasons.append(f"{said[0].upper()}{said[1:]}. By {test}, the {BAYES_NAME} "
+                reasons.append(f"{what}{said[0].upper()}{said[1:]}. By {test}, the {ref_name} "
                                "costs more, and no cutoff nearer it is as good, so the "
                                f"{chosen.label} is kept; it was searched on these same rows, so "
                                "this advantage is optimistic.")
             else:
-                key, name, cutoff = "settled", SETTLED_NAME, float(settled.cutoff)
-                reasons.append(f"{said[0].upper()}{said[1:]}. By {test}, the {BAYES_NAME} "
+                key, cutoff = "settled", float(settled.cutoff)
+                name = SETTLED_RECALIBRATED_NAME if recal else SETTLED_NAME
+                reasons.append(f"{what}{said[0].upper()}{said[1:]}. By {test}, the {ref_name} "
                                "costs more, so the recommended cutoff is the one nearest the "
-                               f"{BAYES_NAME} among those these rows do not show to cost more "
+                               f"{ref_name} among those these rows do not show to cost more "
                                f"than the least: {cutoff:.4f}.")
                 if key not in rows:
                     content.rules.insert(1, rule_row(key, name, cutoff, y01, p, matrix,

@@ -7,6 +7,7 @@ binary two-action report is collected here, its decision rules and recommendatio
 
 from __future__ import annotations
 
+import numbers
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -90,6 +91,10 @@ class ReportContent:
     # a score file's cutoffs through the rule of CostPolicyWrapper(strategy="tuned"):
     # decision.settle_cutoff on the labelled rows of the report (None with a fitted policy)
     settled: Any = None
+    # the cutoff that rule settles toward: the Bayes cutoff carried back through the calibration
+    # map chosen on the same rows (``anchor_map``: its name; "identity" or None: the Bayes cutoff)
+    anchor: float | None = None
+    anchor_map: str | None = None
     rules: list[RuleRow] = field(default_factory=list)
     cost_curve: Any = None
     cost_interval: Any = None
@@ -338,10 +343,20 @@ def collect_content(
             content.chosen_cutoff = float(res.cutoff)
             content.cutoff_source = "the least-cost search on the labelled rows of this report"
             if content.plugin is not None:
-                # the recommendation uses the same settling test as the tuned policy
+                # the recommendation uses the same rule as the tuned policy: settled toward the
+                # Bayes cutoff carried back through the map chosen on these rows
+                from .._cost_policy_rules import recalibrated_plugin_cutoff
+
+                # an int random_state seeds the map's folds as `probwrap cutoff --seed` does,
+                # so that the two recommend the same cutoff on the same file
+                fold_seed = (int(random_state) if isinstance(random_state, numbers.Integral)
+                             else seed)
+                content.anchor, content.anchor_map = recalibrated_plugin_cutoff(
+                    p, y01.astype(np.intp), np.ones(p.shape[0]) if w is None else w,
+                    content.plugin, fold_seed)
                 content.settled = notes.compute(
                     "cutoff", "settled cutoff", settle_cutoff, p, y01.astype(np.intp), matrix,
-                    res, sample_weight=w, expected=(ValueError,))
+                    res, sample_weight=w, anchor=content.anchor, expected=(ValueError,))
             ci = notes.compute(
                 "cutoff", "cutoff interval", cutoff_interval, p, y01.astype(np.intp), matrix,
                 sample_weight=w, capacity=cap, score_bounds=(0.0, 1.0),
