@@ -145,6 +145,29 @@ def test_cost_curve_capacity_greys_out_inadmissible(parcels):
     assert disp.cutoff == ref.cutoff and disp.interval is None
 
 
+def test_cost_curve_from_predictions_marks_the_tuned_policys_cutoff():
+    # the settled cutoff drawn for scores is the one CostPolicyWrapper(strategy="tuned") keeps
+    # on the same rows: naive Bayes' probabilities from scikit-learn's breast cancer data, which
+    # a map fitted on the rows recalibrates (so the plain plug-in cutoff is not the anchor)
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.frozen import FrozenEstimator
+    from sklearn.naive_bayes import GaussianNB
+
+    from probwrap._cost_policy_rules import _HeldOutProbability
+
+    X, yc = load_breast_cancer(return_X_y=True)
+    yc = (yc == 0).astype(int)
+    idx = np.random.default_rng(0).permutation(len(yc))
+    p = GaussianNB().fit(X[idx[:50]], yc[idx[:50]]).predict_proba(X[idx[50:150]])[:, 1]
+    y = yc[idx[50:150]]
+    costs = {"fp": 1.0, "fn": 10.0}
+    disp = CostCurveDisplay.from_predictions(y, p, costs, n_resamples=0, random_state=0)
+    pol = CostPolicyWrapper(FrozenEstimator(_HeldOutProbability().fit()), costs=costs,
+                            strategy="tuned", random_state=0).fit(p[:, None], y)
+    assert pol.cutoff_anchor_map_ not in (None, "identity")
+    assert disp.settled_cutoff == pol.cutoff_
+
+
 def test_cost_curve_from_fitted_policy(parcels):
     policy = CostPolicyWrapper(
         _lr(), costs=COSTS, strategy="tuned", cv=3,

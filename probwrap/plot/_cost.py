@@ -46,7 +46,8 @@ class CostCurveDisplay:
     cutoff with the least cost, its bootstrap interval (:func:`probwrap.decision.cutoff_interval`)
     and the Bayes plug-in cutoff of the costs (:func:`probwrap.decision.plugin_cutoff`), which is
     optimal when the probabilities are calibrated, and, where it differs from the least-cost
-    cutoff, the cutoff the rows support (:func:`probwrap.decision.settle_cutoff`, what
+    cutoff, the cutoff the rows support (:func:`probwrap.decision.settle_cutoff` toward the
+    plug-in cutoff carried back through a calibration map chosen on the rows, what
     ``CostPolicyWrapper(strategy="tuned")`` uses). Under a capacity, decisions that flag too many
     rows are drawn greyed out.
 
@@ -183,8 +184,16 @@ class CostCurveDisplay:
             plug = plugin_cutoff(matrix)
         except ValueError:
             plug = None
-        settled = None if plug is None else settle_cutoff(
-            p, y01, matrix, res, sample_weight=sample_weight).cutoff
+        settled = None
+        if plug is not None:
+            # the tuned policy's rule: settled toward the plug-in cutoff carried back through
+            # the calibration map chosen on these rows (its folds seeded by random_state)
+            from .._cost_policy_rules import recalibrated_plugin_cutoff
+
+            w = np.ones(p.shape[0]) if sample_weight is None else np.asarray(sample_weight, float)
+            anchor, _ = recalibrated_plugin_cutoff(p, y01, w, plug, random_state)
+            settled = settle_cutoff(p, y01, matrix, res, sample_weight=sample_weight,
+                                    anchor=anchor).cutoff
         return cls(
             result=res, plugin_cutoff=plug, interval=interval, name=name, settled_cutoff=settled,
             plugin_cost=None if plug is None else cutoff_cost(y01, p, matrix, plug, sample_weight),
