@@ -106,6 +106,11 @@ def recalibrated_plugin_cutoff(p, y, w, t0: float, random_state: Any) -> tuple[f
             q = cw.predict_proba(u[:, None])[:, 1]
     except ValueError:
         return t0, None
+    note = cw.method_notes_.get(cw.method_, "")
+    if not cw.method_scores_ or "fallback" in note or "without cross-validation" in note:
+        # too few rows of a class to score the maps (or none eligible): a map chosen without
+        # evidence is no better an anchor than the plug-in cutoff itself
+        return t0, None
     if cw.method_ == "identity":
         return t0, "identity"
     if np.any(np.diff(q) < -1e-12):

@@ -62,8 +62,7 @@ def test_cross_fitted_naive_bayes_beats_sklearn_where_the_plugin_cutoff_did_not(
                                 random_state=0).fit(X, y)
     sk = _sklearn_tuned(GaussianNB(), X, y, cv=5, random_state=0)
     ref = _cost(yt, sk.predict(Xt))
-    assert old.cutoff_anchor_ == plugin_cutoff(old._cost_matrix_()) if hasattr(
-        old, "_cost_matrix_") else old.cutoff_anchor_ == pytest.approx(1 / (1 + C_FN))
+    assert old.cutoff_anchor_ == pytest.approx(plugin_cutoff(old.cost_matrix_))
     assert old.cutoff_anchor_map_ is None
     assert ours.cutoff_anchor_map_ not in (None, "identity")
     # naive Bayes' probabilities are far too extreme here: the recalibrated crossing lies far
@@ -187,3 +186,19 @@ def test_sklearn_sigmoid_recalibration_agrees_on_the_direction():
     raw = int(np.sum(p > t0))
     assert int(np.sum(sk.predict_proba(Xh)[:, 1] > t0)) >= raw
     assert int(np.sum(p > pol.cutoff_anchor_)) >= raw
+
+
+def test_a_map_chosen_without_cross_validation_is_not_an_anchor():
+    # one positive row: auto cannot score the maps and would fall back to Platt scaling fitted
+    # on that one row; the anchor is then the plain plug-in cutoff
+    from probwrap._cost_policy_rules import _HeldOutProbability
+
+    rng = np.random.default_rng(0)
+    p = rng.uniform(size=30)
+    y = np.zeros(30, dtype=int)
+    y[5] = 1
+    pol = CostPolicyWrapper(FrozenEstimator(_HeldOutProbability().fit()), costs=COSTS,
+                            strategy="tuned").fit(p[:, None], y)
+    assert pol.cutoff_anchor_map_ is None
+    assert pol.cutoff_anchor_ == pytest.approx(1 / (1 + C_FN))
+    assert pol.cutoff_ == settle_cutoff(p, y, COSTS, pol.cost_curve_).cutoff
