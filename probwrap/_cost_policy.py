@@ -157,8 +157,9 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         ``(c_fp - c_tn) / ((c_fp - c_tn) + (c_fn - c_tp))``, or that plug-in cutoff itself.
     cutoff_anchor_map_ : str or None
         The map behind ``cutoff_anchor_`` (``"identity"``: the model's own probabilities, so the
-        plain plug-in cutoff); None when none was fitted (more than 20,000 held-out rows,
-        tallied Dask input, or a map that is not non-decreasing).
+        plain plug-in cutoff); None when none was used (more than 20,000 held-out rows,
+        tallied Dask input, a class with too few held-out rows to choose a map by
+        cross-validation, or a map that is not non-decreasing).
     action_budget_ : ActionBudget or None
         Fitted capacity limit for the non-cutoff cases.
     heldout_cost_ : float or None
