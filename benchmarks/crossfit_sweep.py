@@ -29,7 +29,9 @@ It also counts crashes and probabilities of exactly 0 or 1 returned by ``pw``.
 Data: ``--sets grid`` scikit-learn's and statsmodels' bundled sets of
 ``benchmarks/small_data_sweep.py`` (both of its lists; sets under 200 rows are left out at 100
 training rows, under 400 at 300); ``--sets wide`` the R and econometrics sets of
-``benchmarks/wide_data_sweep.py`` (``pip install -e ".[sweep]"``). Base models: logistic
+``benchmarks/wide_data_sweep.py`` (``pip install -e ".[sweep]"``); ``--sets fresh`` the
+lifelines, palmerpenguins, pingouin, vega_datasets, sktime and statsmodels sets of
+``benchmarks/fresh_data_sweep.py`` (the same extra). Base models: logistic
 regression and a linear SVM (margins) on standardised features, Gaussian naive Bayes, a random
 forest and gradient boosting.
 
@@ -92,6 +94,11 @@ def data(which: str, quick: bool):
         import wide_data_sweep as W
 
         yield from W.wide_data_sets(quick)
+        return
+    if which == "fresh":
+        import fresh_data_sweep as F
+
+        yield from F.fresh_data_sets()
         return
     for name, X, y in [*S.data_sets(quick), *([] if quick else S.new_data_sets(False))]:
         if quick and name != "breast_cancer":
