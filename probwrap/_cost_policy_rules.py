@@ -13,8 +13,8 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
-from sklearn.base import BaseEstimator, ClassifierMixin
 
+from ._column_models import ProbabilityColumn
 from ._cost_policy_summary import CURVE_POINTS, SMALL_HELDOUT_ROWS, _heldout_summary
 from ._validation import plain
 from .decision import (
@@ -55,23 +55,6 @@ RECALIBRATED_ANCHOR_MAX_ROWS = SMALL_HELDOUT_ROWS
 _ANCHOR_CANDIDATES = ("identity", "temperature", "platt", "beta")
 
 
-class _HeldOutProbability(ClassifierMixin, BaseEstimator):
-    """A fitted binary "model" whose probability of class 1 is the first column of ``X``: lets
-    ``CalibrationWrapper(method="auto")`` choose a map for probabilities already computed."""
-
-    def fit(self, X: Any = None, y: Any = None) -> _HeldOutProbability:
-        self.classes_ = np.array([0, 1])
-        self.n_features_in_ = 1
-        return self
-
-    def predict_proba(self, X: Any) -> np.ndarray:
-        q = np.asarray(X, dtype=float)[:, 0]
-        return np.column_stack([1.0 - q, q])
-
-    def predict(self, X: Any) -> np.ndarray:
-        return (np.asarray(X, dtype=float)[:, 0] > 0.5).astype(int)
-
-
 def recalibrated_plugin_cutoff(p, y, w, t0: float, random_state: Any) -> tuple[float, str | None]:
     """The plug-in cutoff ``t0`` carried back to the scale of the held-out probabilities ``p``
     through the map ``CalibrationWrapper(method="auto")`` chooses for them on the same rows (the
@@ -103,7 +86,7 @@ def recalibrated_plugin_cutoff(p, y, w, t0: float, random_state: Any) -> tuple[f
             # map's own notes (few rows of a class, a fallback) are not the user's concern here
             warnings.simplefilter("ignore")
             cw = CalibrationWrapper(
-                FrozenEstimator(_HeldOutProbability().fit()), method="auto", candidates=names,
+                FrozenEstimator(ProbabilityColumn().fit()), method="auto", candidates=names,
                 # seeded even when random_state is None: a frozen model's tuned cutoff, which
                 # used no random numbers before, stays reproducible
                 random_state=0 if random_state is None else random_state,

@@ -156,9 +156,9 @@ def test_cutoff_equals_the_library(files, capsys, capacity):
     from sklearn.frozen import FrozenEstimator
 
     from probwrap import CostPolicyWrapper
-    from probwrap._cost_policy_rules import _HeldOutProbability
+    from probwrap._column_models import ProbabilityColumn
 
-    pol = CostPolicyWrapper(FrozenEstimator(_HeldOutProbability().fit()), costs=COSTS,
+    pol = CostPolicyWrapper(FrozenEstimator(ProbabilityColumn().fit()), costs=COSTS,
                             strategy="tuned", capacity=capacity,
                             random_state=0).fit(p[:, None], y)
     kept = got["settled_cutoff"]

@@ -191,13 +191,13 @@ def test_sklearn_sigmoid_recalibration_agrees_on_the_direction():
 def test_a_map_chosen_without_cross_validation_is_not_an_anchor():
     # one positive row: auto cannot score the maps and would fall back to Platt scaling fitted
     # on that one row; the anchor is then the plain plug-in cutoff
-    from probwrap._cost_policy_rules import _HeldOutProbability
+    from probwrap._column_models import ProbabilityColumn
 
     rng = np.random.default_rng(0)
     p = rng.uniform(size=30)
     y = np.zeros(30, dtype=int)
     y[5] = 1
-    pol = CostPolicyWrapper(FrozenEstimator(_HeldOutProbability().fit()), costs=COSTS,
+    pol = CostPolicyWrapper(FrozenEstimator(ProbabilityColumn().fit()), costs=COSTS,
                             strategy="tuned").fit(p[:, None], y)
     assert pol.cutoff_anchor_map_ is None
     assert pol.cutoff_anchor_ == pytest.approx(1 / (1 + C_FN))

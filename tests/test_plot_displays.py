@@ -153,7 +153,7 @@ def test_cost_curve_from_predictions_marks_the_tuned_policys_cutoff():
     from sklearn.frozen import FrozenEstimator
     from sklearn.naive_bayes import GaussianNB
 
-    from probwrap._cost_policy_rules import _HeldOutProbability
+    from probwrap._column_models import ProbabilityColumn
 
     X, yc = load_breast_cancer(return_X_y=True)
     yc = (yc == 0).astype(int)
@@ -162,7 +162,7 @@ def test_cost_curve_from_predictions_marks_the_tuned_policys_cutoff():
     y = yc[idx[50:150]]
     costs = {"fp": 1.0, "fn": 10.0}
     disp = CostCurveDisplay.from_predictions(y, p, costs, n_resamples=0, random_state=0)
-    pol = CostPolicyWrapper(FrozenEstimator(_HeldOutProbability().fit()), costs=costs,
+    pol = CostPolicyWrapper(FrozenEstimator(ProbabilityColumn().fit()), costs=costs,
                             strategy="tuned", random_state=0).fit(p[:, None], y)
     assert pol.cutoff_anchor_map_ not in (None, "identity")
     assert disp.settled_cutoff == pol.cutoff_

@@ -145,12 +145,12 @@ def test_score_file_recommendation_is_the_tuned_policys_settled_cutoff(seed):
     from sklearn.frozen import FrozenEstimator
 
     from probwrap import CalibrationWrapper
-    from probwrap._cost_policy_rules import _HeldOutProbability
+    from probwrap._column_models import ProbabilityColumn
 
     if content.anchor_map in (None, "identity"):
         assert content.anchor == pytest.approx(0.2)
     else:
-        cal = CalibrationWrapper(FrozenEstimator(_HeldOutProbability().fit()),
+        cal = CalibrationWrapper(FrozenEstimator(ProbabilityColumn().fit()),
                                  method=content.anchor_map).fit(p[:, None], y)
         q = cal.predict_proba(p[:, None])[:, 1]
         np.testing.assert_array_equal(p > content.anchor, q > 0.2)

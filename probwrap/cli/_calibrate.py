@@ -18,7 +18,6 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-from sklearn.base import BaseEstimator, ClassifierMixin
 
 from .._validation import plain
 from ._common import (
@@ -83,18 +82,6 @@ def report_warnings(verb: str, caught: list) -> None:
             print(f"probwrap {verb}: warning: {message}", file=sys.stderr)
 
 
-# -- the score column as an already-fitted model -------------------------------------------------
-class _ScoreColumn(ClassifierMixin, BaseEstimator):
-    """A fitted "model" whose decision function is the first column of ``X`` (log-odds)."""
-
-    def fit(self, X: Any = None, y: Any = None) -> _ScoreColumn:
-        self.classes_ = np.array([0, 1])
-        return self
-
-    def decision_function(self, X: Any) -> np.ndarray:
-        return np.asarray(X, dtype=float)[:, 0]
-
-
 def to_log_odds(scores: np.ndarray, scale: str) -> np.ndarray:
     """Scores on the log-odds scale that the maps take (probabilities via proba_to_log_odds)."""
     from probwrap.calibration import proba_to_log_odds
@@ -113,9 +100,10 @@ def fit_map(
     from sklearn.frozen import FrozenEstimator
 
     from probwrap import CalibrationWrapper
+    from probwrap._column_models import LogOddsColumn
 
     wrapper = CalibrationWrapper(
-        FrozenEstimator(_ScoreColumn().fit()), method=method, cv=folds, random_state=seed
+        FrozenEstimator(LogOddsColumn().fit()), method=method, cv=folds, random_state=seed
     )
     return wrapper.fit(log_odds[:, None], y, sample_weight=sample_weight)
 
