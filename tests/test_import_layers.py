@@ -39,6 +39,7 @@ LAYERS = {
     "_cost_policy": 3,
     "_cost_policy_summary": 3,
     "_cost_policy_rules": 3,
+    "_column_models": 3,  # scores as a fitted model, for the wrappers on computed scores
     "_prior_shift": 3,
     "_prior_shift_tallied": 3,
     "__init__": 3,  # the package's top level: the wrappers' public face
