@@ -31,9 +31,15 @@ Data: ``--sets grid`` scikit-learn's and statsmodels' bundled sets of
 training rows, under 400 at 300); ``--sets wide`` the R and econometrics sets of
 ``benchmarks/wide_data_sweep.py`` (``pip install -e ".[sweep]"``); ``--sets fresh`` the
 lifelines, palmerpenguins, pingouin, vega_datasets, sktime and statsmodels sets of
-``benchmarks/fresh_data_sweep.py`` (the same extra). Base models: logistic
+``benchmarks/fresh_data_sweep.py`` (the same extra); ``--sets study`` the causaldata and
+linearmodels sets of ``benchmarks/study_data_sweep.py`` (the same extra). Base models: logistic
 regression and a linear SVM (margins) on standardised features, Gaussian naive Bayes, a random
 forest and gradient boosting.
+
+``--only cost-multiclass`` does the same on the sets with more than two classes (errors on
+true class j cost j + 1): ``CostPolicyWrapper(model, C, strategy="tuned")``, the Bayes rule
+on ``CalibrationWrapper(model)``, the Bayes rule on the model's own probabilities and the
+model's ``predict``.
 
 ``--only cost`` compares the cost rules the same way, on the binary sets (the minority class
 positive; a false alarm costs 1, a miss 3 or 10): the realised test cost per row of
@@ -99,6 +105,11 @@ def data(which: str, quick: bool):
         import fresh_data_sweep as F
 
         yield from F.fresh_data_sets()
+        return
+    if which == "study":
+        import study_data_sweep as D
+
+        yield from D.study_data_sets(quick)
         return
     for name, X, y in [*S.data_sets(quick), *([] if quick else S.new_data_sets(False))]:
         if quick and name != "breast_cancer":
@@ -284,9 +295,83 @@ def cost_main(argv: list[str]) -> None:
               + ", ".join(f"{k} {v:.4f}" for k, v in c["loss"].items()))
 
 
+def cost_cell_multiclass(model, X, y, tr, te) -> dict:
+    """Realised test cost per row of each multiclass rule (errors on true class j cost j + 1)."""
+    from probwrap import CostPolicyWrapper
+
+    k = int(y.max()) + 1
+    C = (1 - np.eye(k)) * (1 + np.arange(k))[:, None]
+
+    def realised(act) -> float:
+        return float(C[y[te], np.asarray(act).astype(int)].mean())
+
+    margins = not hasattr(model, "predict_proba")
+    inner = CalibrationWrapper(clone(model)) if margins else clone(model)
+    out = {}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        out["pw_tuned"] = realised(CostPolicyWrapper(
+            clone(inner), costs=C, strategy="tuned", random_state=0).fit(
+                X[tr], y[tr]).predict(X[te]))
+        cal = inner if margins else CalibrationWrapper(clone(model))
+        out["pw_calibrated_bayes"] = realised(CostPolicyWrapper(clone(cal), costs=C).fit(
+            X[tr], y[tr]).predict(X[te]))
+        raw = clone(model).fit(X[tr], y[tr])
+        if not margins:
+            out["raw_bayes"] = realised(np.argmin(raw.predict_proba(X[te]) @ C, axis=1))
+        out["argmax"] = realised(np.searchsorted(raw.classes_, raw.predict(X[te])))
+    return out
+
+
+def cost_multiclass_main(argv: list[str]) -> None:
+    """``--only cost-multiclass``: the multiclass cost rules cross-fitted, side by side."""
+    quick = "--quick" in argv
+    which = argv[argv.index("--sets") + 1] if "--sets" in argv else "grid"
+    seed = int(argv[argv.index("--seed") + 1]) if "--seed" in argv else 0
+    cells = []
+    for name, X, y in data(which, quick):
+        _, y = np.unique(np.asarray(y), return_inverse=True)
+        if y.max() < 2:
+            continue
+        X = np.asarray(X, dtype=float)
+        for n_train in (100, 300):
+            if len(y) < n_train + 100:
+                continue
+            idx = np.random.default_rng(seed).permutation(len(y))
+            tr, te = idx[:n_train], idx[n_train:][:3000]
+            if np.bincount(y[tr], minlength=y.max() + 1).min() < 5:
+                continue
+            for mname, model in base_models(quick).items():
+                try:
+                    loss = cost_cell_multiclass(model, X, y, tr, te)
+                except Exception as exc:  # noqa: BLE001 - counted and shown
+                    print(f"CRASH {name} | {mname} | {n_train}: {type(exc).__name__}: {exc}")
+                    continue
+                cells.append({"set": name, "model": mname, "rows": n_train, "loss": loss})
+                print(f"{name} | {mname} | {n_train} rows: "
+                      + ", ".join(f"{a} {b:.4f}" for a, b in loss.items()), flush=True)
+    pairs = [("pw_tuned", "pw_calibrated_bayes"), ("pw_tuned", "raw_bayes"),
+             ("pw_tuned", "argmax"), ("pw_calibrated_bayes", "argmax")]
+    floor = 1e-3
+    for rows in sorted({c["rows"] for c in cells}) + [None]:
+        keep = [c for c in cells if rows is None or c["rows"] == rows]
+        print(f"\n{'all cells' if rows is None else f'{rows} training rows'} ({len(keep)} "
+              "cells): realised test cost ratio, geometric mean | worst | best | cells above "
+              "1.10")
+        for a, b in pairs:
+            r = np.array([(c["loss"][a] + floor) / (c["loss"][b] + floor) for c in keep
+                          if a in c["loss"] and b in c["loss"]])
+            if r.size:
+                print(f"  {a:>20} / {b:<20} {np.exp(np.mean(np.log(r))):6.3f} | {r.max():6.3f} "
+                      f"| {r.min():6.3f} | {int(np.sum(r > 1.10))} of {r.size}")
+
+
 def main(argv: list[str]) -> None:
     if "--only" in argv and argv[argv.index("--only") + 1] == "cost":
         cost_main(argv)
+        return
+    if "--only" in argv and argv[argv.index("--only") + 1] == "cost-multiclass":
+        cost_multiclass_main(argv)
         return
     quick = "--quick" in argv
     which = argv[argv.index("--sets") + 1] if "--sets" in argv else "grid"
