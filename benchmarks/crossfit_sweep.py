@@ -158,8 +158,12 @@ def one_cell(model, X, y, tr, te, isotonic: bool, methods: bool = False) -> tupl
 
 
 def summary(cells: list) -> None:
+    # a test log loss of exactly 0 (every test row given probability 1 for its class, on
+    # separable data) would divide by zero: both sides get this floor (no effect above 1e-4)
+    tiny = 1e-6
+
     def ratio(a, b, keep=lambda c: True):
-        return np.array([c["loss"][a] / c["loss"][b] for c in cells
+        return np.array([(c["loss"][a] + tiny) / (c["loss"][b] + tiny) for c in cells
                          if a in c["loss"] and b in c["loss"] and keep(c)])
 
     pairs = [("pw", "sk_sigmoid"), ("pw", "sk_temperature"), ("pw", "sk_sigmoid_refit"),
@@ -181,8 +185,8 @@ def summary(cells: list) -> None:
             if r.size:
                 print(f"  {a:>14} / {b:<22} {np.exp(np.mean(np.log(r))):6.3f} | {r.max():6.3f} | "
                       f"{r.min():6.3f} | {int(np.sum(r > 1.05))} of {r.size}")
-    worst = sorted(cells, key=lambda c: -c["loss"]["pw"] / min(
-        c["loss"].get(k, np.inf) for k in ("sk_sigmoid", "sk_temperature")))[:8]
+    worst = sorted(cells, key=lambda c: -(c["loss"]["pw"] + tiny) / min(
+        c["loss"].get(k, np.inf) + tiny for k in ("sk_sigmoid", "sk_temperature")))[:8]
     print("\nworst cells of pw against the better of scikit-learn's sigmoid and temperature:")
     for c in worst:
         shown = {k: round(v, 3) for k, v in c["loss"].items()}
@@ -191,6 +195,9 @@ def summary(cells: list) -> None:
     if t.size:
         print(f"\nfit and predict time, pw / scikit-learn's sigmoid: geometric mean "
               f"{np.exp(np.mean(np.log(t))):.2f}")
+    near0 = [c for c in cells if min(c["loss"].values(), default=1.0) < 0.01]
+    print(f"cells where some rule's test log loss is under 0.01 nats (nearly separable data: "
+          f"their ratios compare tiny numbers): {len(near0)}")
     print(f"crashes: {sum(c.get('crash', 0) for c in cells)}; cells where pw returned a "
           f"probability of exactly 0 or 1: {sum(c['exact01'] for c in cells)}")
 

@@ -154,7 +154,8 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         ``"tuned"`` binary cutoff without ``guarantee`` (None otherwise): the cutoff kept unless the held-out rows
         show that the least-cost cutoff costs less — the probability ``p`` at which the
         calibration map chosen on the held-out rows reaches the plug-in cutoff
-        ``(c_fp - c_tn) / ((c_fp - c_tn) + (c_fn - c_tp))``, or that plug-in cutoff itself.
+        ``(c_fp - c_tn) / ((c_fp - c_tn) + (c_fn - c_tp))`` (below 0 when the map lifts even a
+        probability of 0 above it: every row flagged), or that plug-in cutoff itself.
     cutoff_anchor_map_ : str or None
         The map behind ``cutoff_anchor_`` (``"identity"``: the model's own probabilities, so the
         plain plug-in cutoff); None when none was used (more than 20,000 held-out rows,

@@ -165,9 +165,68 @@ def test_settle_cutoff_anchor_argument():
     # to the nearest cutoff not shown to cost more, from above
     far = settle_cutoff(p, y, costs, anchor=0.95)
     assert not far.kept_plugin and far.cutoff < 0.95 and far.anchor == 0.95
-    for bad in (-0.1, 1.5, float("nan"), "x"):
+    for bad in (-1.5, 1.5, float("nan"), "x"):
         with pytest.raises(ValueError, match="`anchor`"):
             settle_cutoff(p, y, costs, anchor=bad)
+    # an anchor below 0 flags every row, probabilities of exactly 0 included
+    p0 = [0.0, 0.0, 0.0, 0.2, 0.6, 1.0, 1.0, 1.0]
+    y0 = [0, 1, 1, 0, 1, 1, 1, 1]
+    kept_all = settle_cutoff(p0, y0, {"fp": 1.0, "fn": 10.0}, anchor=-0.1)
+    assert kept_all.kept_plugin and kept_all.cutoff == -0.1
+
+
+def test_a_map_that_lifts_zero_above_the_plugin_value_flags_exact_zeros():
+    # probabilities piled at exactly 0 and 1 (naive Bayes on many features): a third of the rows
+    # at 0 are positives, far above the plug-in value 1/11, so the recalibrated plug-in rule
+    # flags every row - which on p > c takes a cutoff below 0 (0 itself leaves the zeros out)
+    rng = np.random.default_rng(0)
+    p = np.concatenate([np.zeros(120), np.ones(80), rng.uniform(0.05, 0.95, 40)])
+    y = np.concatenate([rng.random(120) < 1 / 3, rng.random(80) < 0.9,
+                        rng.random(40) < 0.5]).astype(int)
+    c, name = rules.recalibrated_plugin_cutoff(p, y, np.ones(p.shape[0]), 1 / 11, 0)
+    assert name not in (None, "identity")
+    cal = CalibrationWrapper(FrozenEstimator(rules.ProbabilityColumn().fit()), method=name,
+                             random_state=0).fit(p[:, None], y)
+    assert cal.predict_proba([[0.0]])[0, 1] > 1 / 11  # the map's own verdict on p = 0
+    assert c < 0.0
+    assert np.all(p > c)
+    # the value is the cutoff search's own "flag every row" cutoff (half a mean gap below 0)
+    u = np.unique(p)
+    assert c == pytest.approx(-0.5 * (u[-1] - u[0]) / (u.shape[0] - 1))
+
+
+def test_cross_fitted_naive_bayes_on_digits_flags_the_rows_its_map_lifts():
+    # scikit-learn's digits, "8" against the rest, naive Bayes cross-fitted on 100 rows, a miss
+    # costing 30 (a cell found by benchmarks/crossfit_sweep.py --only cost on this data): the
+    # out-of-fold probabilities pile at exactly 0 and 1, the map chosen on them lifts 0 above
+    # the plug-in value, and the tuned rule now flags every row as scikit-learn's
+    # TunedThresholdClassifierCV and the plug-in rule on CalibrationWrapper(model) would say;
+    # with the anchor at 0 the rows at exactly 0 were left out (test cost 1.17 a row)
+    from sklearn.datasets import load_digits
+
+    X, t = load_digits(return_X_y=True)
+    y = (t == 8).astype(int)
+    idx = np.random.default_rng(3).permutation(len(y))
+    tr, te = idx[:100], idx[100:]
+    costs = {"fp": 1.0, "fn": 30.0}
+
+    def cost(act):
+        act = np.asarray(act).astype(int)
+        return float(np.mean((act == 1) & (y[te] == 0)) + 30 * np.mean((act == 0) & (y[te] == 1)))
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        ours = CostPolicyWrapper(GaussianNB(), costs=costs, strategy="tuned",
+                                 random_state=0).fit(X[tr], y[tr])
+        scorer = make_scorer(lambda yy, pp: -float(
+            np.mean((np.asarray(pp) == 1) & (np.asarray(yy) == 0))
+            + 30 * np.mean((np.asarray(pp) == 0) & (np.asarray(yy) == 1))))
+        sk = TunedThresholdClassifierCV(GaussianNB(), scoring=scorer, cv=5,
+                                        random_state=0).fit(X[tr], y[tr])
+    assert ours.cutoff_anchor_ < 0.0 and ours.cutoff_ < 0.0
+    assert cost(ours.predict(X[te])) == pytest.approx(float(np.mean(y[te] == 0)))
+    assert cost(ours.predict(X[te])) <= cost(sk.predict(X[te])) + 1e-12
+    assert cost(ours.predict(X[te])) < 1.0  # the anchor at 0 gave 1.17
 
 
 def test_sklearn_sigmoid_recalibration_agrees_on_the_direction():

@@ -66,8 +66,11 @@ def _check_anchor(anchor: Any) -> float:
         value = float(anchor)
     except (TypeError, ValueError):
         value = float("nan")
-    if not 0.0 <= value <= 1.0:
-        raise ValueError(f"`anchor` must be a probability cutoff in [0, 1]; got {anchor!r}.")
+    if not -1.0 <= value <= 1.0:
+        raise ValueError(
+            "`anchor` must be a probability cutoff in [0, 1] (or below 0, down to -1, for a "
+            f"rule that flags every row); got {anchor!r}."
+        )
     return value
 
 
@@ -122,11 +125,13 @@ def settle_cutoff(
     level : float in (0, 0.5), default=0.05
         One-sided level at which the held-out rows must show that a cutoff costs more than the
         minimum for it to be passed over.
-    anchor : float in [0, 1], default=None
+    anchor : float in [-1, 1], default=None
         The cutoff to keep unless the rows reject it, in place of the plug-in cutoff: for
         example the plug-in cutoff carried back through a calibration map fitted on the same
         rows (what ``CostPolicyWrapper(strategy="tuned")`` passes, see
-        :class:`~probwrap.CostPolicyWrapper`). None: the plug-in cutoff.
+        :class:`~probwrap.CostPolicyWrapper`). A value below 0 flags every row, probabilities
+        of exactly 0 included (rows are flagged when ``score > anchor``). None: the plug-in
+        cutoff.
 
     Returns
     -------
