@@ -626,6 +626,12 @@ def _cost_new_binary_sets(quick: bool):
             yield name, X, (y == 1).astype(int) if y.mean() <= 0.5 else (y == 0).astype(int)
 
 
+#: Added to both costs of a ratio (a cost per row; the costs here are 1 for a false alarm and 3
+#: or 10 for a miss, so rules cost 0.05-1 a row on most cells): a cell where both rules cost
+#: about 0 says nothing about their ratio (crossfit_sweep.py uses the same floor).
+COST_FLOOR = 1e-3
+
+
 def cost_sweep(quick: bool, seeds, new: bool = False) -> dict:
     from sklearn.metrics import make_scorer
     from sklearn.model_selection import TunedThresholdClassifierCV
@@ -698,10 +704,12 @@ def cost_sweep(quick: bool, seeds, new: bool = False) -> dict:
                 continue
             line = f"  n={n!s:>4} ({len(keys):3d} cells)"
             for other in [r for r in rules if r not in COST_MINE]:
-                r = np.array([np.mean(cells[k][mine]) / max(np.mean(cells[k][other]), 1e-9)
-                              for k in keys])
+                # COST_FLOOR added to both sides: a cell where a rule costs exactly 0 (separable
+                # data) gave a ratio of 0 or 1e9, which swamped the geometric mean
+                r = np.array([(np.mean(cells[k][mine]) + COST_FLOOR)
+                              / (np.mean(cells[k][other]) + COST_FLOOR) for k in keys])
                 worst = keys[int(np.argmax(r))]
-                gm = float(np.exp(np.mean(np.log(np.maximum(r, 1e-9)))))
+                gm = float(np.exp(np.mean(np.log(r))))
                 summary_rows[(mine, n, other)] = (gm, float(r.max()), worst)
                 line += f"   vs {other}: {gm:5.3f} | {r.max():5.2f}"
             print(line)
@@ -785,9 +793,9 @@ def cost_sweep_multiclass(quick: bool, seeds, new: bool = False) -> None:
                 continue
             line = f"  {mine:11} n={n:4d} ({len(keys):3d} cells)"
             for other in ("bayes", "argmax"):
-                r = np.array([np.mean(cells[c][mine]) / max(np.mean(cells[c][other]), 1e-9)
-                              for c in keys])
-                gm = float(np.exp(np.mean(np.log(np.maximum(r, 1e-9)))))
+                r = np.array([(np.mean(cells[c][mine]) + COST_FLOOR)
+                              / (np.mean(cells[c][other]) + COST_FLOOR) for c in keys])
+                gm = float(np.exp(np.mean(np.log(r))))
                 line += f"   vs {other}: {gm:5.3f} | {r.max():5.2f}"
             print(line)
 
