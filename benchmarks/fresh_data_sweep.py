@@ -367,8 +367,10 @@ def user_checks(quick: bool, sets=None) -> None:
                 fixed_sk = FixedThresholdClassifier(fb, threshold=1 / (1 + c_fn)).fit(Xc, yb)
                 if not np.array_equal(fixed_mine.predict(X[test]), fixed_sk.predict(X[test])):
                     flag("fixed cutoff differs from FixedThresholdClassifier", name, f"c={c_fn}")
-                r = S._realised(yt, mine.predict(X[test]), c_fn) / max(
-                    S._realised(yt, sk.predict(X[test]), c_fn), 1e-9)
+                # the floor of small_data_sweep's cost ratios (a cost of exactly 0 on separable
+                # data gave a ratio of 0, and a geometric mean of 0)
+                r = (S._realised(yt, mine.predict(X[test]), c_fn) + S.COST_FLOOR) / (
+                    S._realised(yt, sk.predict(X[test]), c_fn) + S.COST_FLOOR)
                 cost_ratio[len(cal)].append(r)
             del neg
         print(f"user: {name} done", flush=True)

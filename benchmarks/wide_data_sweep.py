@@ -286,8 +286,8 @@ def prior_checks(quick: bool) -> None:
     """``PriorShiftWrapper.adapt``'s estimate and 95 % interval of the test prevalence.
 
     Binary sets, the five base models trained on a quarter of the rows, 20, 60 and 200 random
-    labelled rows, test rows (at most 800 of the others) resampled to 0.5x, 1x and 2x their
-    prevalence. Counted: intervals that miss the true prevalence, estimates more than 0.3 off
+    labelled rows, test rows (at most 800 of the others, drawn without replacement) at 0.5x, 1x
+    and 2x their prevalence. Counted: intervals that miss the true prevalence, estimates more than 0.3 off
     without any warning, a maximum-likelihood share at 0 or 1 without the warning that says so,
     a target prior within 0.02 of 0 or 1 without a warning, and errors."""
     from sklearn.frozen import FrozenEstimator
@@ -315,16 +315,24 @@ def prior_checks(quick: bool) -> None:
                 if len(rest) < n + 100:
                     continue
                 cal = rng.choice(rest, n, replace=False)
-                test = rest[~np.isin(rest, cal)][:800]
+                test = rest[~np.isin(rest, cal)]
                 pos, neg = test[y[test] == 1], test[y[test] == 0]
                 if len(np.unique(y[cal])) < 2 or min(len(pos), len(neg)) < 3:
                     continue
                 for factor in (0.5, 1.0, 2.0):
                     target = float(np.clip(factor * len(pos) / len(test), 0.02, 0.9))
-                    n_pos = max(1, min(len(test) - 1, int(round(target * len(test)))))
-                    rows = np.concatenate([rng.choice(pos, n_pos),
-                                           rng.choice(neg, len(test) - n_pos)])
-                    truth = n_pos / len(test)
+                    # drawn without replacement (at most 800 rows, fewer where a class runs
+                    # short): rows drawn with replacement from a small pool repeat, and the
+                    # pool's own sampling error - which no interval on these rows can know
+                    # about - then adds to the estimate's spread (the first version did that
+                    # and counted 9 % misses at 95 % where draws without replacement give 5-6 %)
+                    m = int(min(800, len(pos) / target, len(neg) / (1 - target)))
+                    n_pos = max(1, m - len(neg), min(m - 1, int(round(target * m))))
+                    if m < 100:
+                        continue
+                    rows = np.concatenate([rng.choice(pos, n_pos, replace=False),
+                                           rng.choice(neg, m - n_pos, replace=False)])
+                    truth = n_pos / m
                     with warnings.catch_warnings(record=True) as caught:
                         warnings.simplefilter("always")
                         try:
