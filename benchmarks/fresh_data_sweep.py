@@ -397,8 +397,9 @@ def _probwrap(args: str, cwd: str):
     return subprocess.run(cmd, cwd=cwd, capture_output=True, text=True, env=env, timeout=300)
 
 
-def cli_checks(quick: bool) -> None:
-    """Score files from the fresh sets through the command line, as a user would type it."""
+def cli_checks(quick: bool, sets=None) -> None:
+    """Score files from the fresh sets (or ``sets(quick, labels=True)``) through the command
+    line, as a user would type it."""
     import pandas as pd
     from sklearn.ensemble import RandomForestClassifier
     from sklearn.model_selection import cross_val_predict
@@ -417,7 +418,7 @@ def cli_checks(quick: bool) -> None:
         for verb in ("cutoff", "calibrate", "prevalence", "report"):
             res = _probwrap(f"{verb} --help", tmp)
             expect(res.returncode == 0 and len(res.stdout) > 200, f"{verb} --help", res)
-        for name, X, y_lab in fresh_data_sets(quick, labels=True):
+        for name, X, y_lab in (sets or fresh_data_sets)(quick, labels=True):
             classes, counts = np.unique(y_lab, return_counts=True)
             if len(classes) != 2:
                 continue

@@ -24,6 +24,9 @@ generator to them; nothing is copied):
   scaled weights (``fresh_data_sweep.user_checks``);
 * ``--only prior``: ``PriorShiftWrapper.adapt``'s estimate and 95 % interval of the test
   prevalence against the truth (``wide_data_sweep.prior_checks``);
+* ``--only cli``: out-of-fold forest scores of the binary sets written to CSV files and put
+  through ``probwrap cutoff``, ``calibrate`` and ``report`` as a user would type them, with the
+  usual mistakes (``fresh_data_sweep.cli_checks``);
 * ``benchmarks/crossfit_sweep.py --sets study`` runs the cross-fitted comparisons on them.
 
 Run: ``nice python benchmarks/study_data_sweep.py --quick`` (three sets, two models),
@@ -189,8 +192,10 @@ def main(argv: list[str]) -> None:
         F.user_checks(quick, sets=study_data_sets)
     elif only == "prior":
         W.prior_checks(quick)
+    elif only == "cli":
+        F.cli_checks(quick, sets=study_data_sets)
     else:
-        raise SystemExit(f"--only must be wrappers, cost, user or prior; got {only!r}")
+        raise SystemExit(f"--only must be wrappers, cost, user, prior or cli; got {only!r}")
 
 
 if __name__ == "__main__":
