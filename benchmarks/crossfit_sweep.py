@@ -213,12 +213,45 @@ def _minority_positive(y) -> np.ndarray | None:
     return (yi == 1).astype(int) if yi.mean() <= 0.5 else (yi == 0).astype(int)
 
 
+def _probwrap_cost_rules(model, X, y, X_test, costs, realised) -> dict:
+    """Realised test cost of probwrap's two cost rules fitted on ``(X, y)``: the tuned rule and
+    the plug-in (Bayes) rule on ``CalibrationWrapper(model)``. probwrap needs probabilities:
+    margins go through the cross-fitted calibration for both."""
+    from probwrap import CostPolicyWrapper
+
+    margins = not hasattr(model, "predict_proba")
+    inner = CalibrationWrapper(clone(model)) if margins else clone(model)
+    cal = inner if margins else CalibrationWrapper(clone(model))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        tuned = CostPolicyWrapper(clone(inner), costs=costs, strategy="tuned", random_state=0)
+        bayes = CostPolicyWrapper(clone(cal), costs=costs)
+        return {"pw_tuned": realised(tuned.fit(X, y).predict(X_test)),
+                "pw_calibrated_bayes": realised(bayes.fit(X, y).predict(X_test))}
+
+
+def _print_cost_ratios(cells: list, pairs: list) -> None:
+    """Per training size and overall: each pair's realised test cost ratio (geometric mean,
+    worst, best, cells above 1.10), the floor of small_data_sweep's cost ratios on both sides."""
+    floor = S.COST_FLOOR
+    for rows in sorted({c["rows"] for c in cells}) + [None]:
+        keep = [c for c in cells if rows is None or c["rows"] == rows]
+        print(f"\n{'all cells' if rows is None else f'{rows} training rows'} ({len(keep)} "
+              "cells): realised test cost ratio, geometric mean | worst | best | cells above "
+              "1.10")
+        for a, b in pairs:
+            r = np.array([(c["loss"][a] + floor) / (c["loss"][b] + floor) for c in keep
+                          if a in c["loss"] and b in c["loss"]])
+            if r.size:
+                print(f"  {a:>20} / {b:<20} {np.exp(np.mean(np.log(r))):6.3f} | {r.max():6.3f} "
+                      f"| {r.min():6.3f} | {int(np.sum(r > 1.10))} of {r.size}")
+
+
 def cost_cell(model, X, y, tr, te, c_fn: float) -> dict:
     """Realised test cost per row of each rule fitted on the training rows ``tr``."""
     from sklearn.metrics import make_scorer
     from sklearn.model_selection import TunedThresholdClassifierCV
 
-    from probwrap import CostPolicyWrapper
 
     def realised(act) -> float:
         act = np.asarray(act).astype(int)
@@ -226,17 +259,9 @@ def cost_cell(model, X, y, tr, te, c_fn: float) -> dict:
 
     costs = {"fp": 1.0, "fn": c_fn}
     margins = not hasattr(model, "predict_proba")
-    # probwrap needs probabilities: margins go through the cross-fitted calibration
-    inner = CalibrationWrapper(clone(model)) if margins else clone(model)
-    out = {}
+    out = _probwrap_cost_rules(model, X[tr], y[tr], X[te], costs, realised)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        out["pw_tuned"] = realised(CostPolicyWrapper(
-            clone(inner), costs=costs, strategy="tuned", random_state=0).fit(
-                X[tr], y[tr]).predict(X[te]))
-        cal = inner if margins else CalibrationWrapper(clone(model))
-        out["pw_calibrated_bayes"] = realised(CostPolicyWrapper(clone(cal), costs=costs).fit(
-            X[tr], y[tr]).predict(X[te]))
         scorer = make_scorer(lambda yy, pp: -float(
             np.mean((np.asarray(pp) == 1) & (np.asarray(yy) == 0))
             + c_fn * np.mean((np.asarray(pp) == 0) & (np.asarray(yy) == 1))))
@@ -282,18 +307,8 @@ def cost_main(argv: list[str]) -> None:
     pairs = [("pw_tuned", "sk_tuned"), ("pw_calibrated_bayes", "sk_tuned"),
              ("pw_tuned", "pw_calibrated_bayes"), ("pw_tuned", "raw_bayes"),
              ("sk_tuned", "raw_bayes"), ("pw_tuned", "half"), ("sk_tuned", "half")]
-    floor = 1e-3  # a cell whose both costs are ~0 says nothing about the ratio
-    for rows in sorted({c["rows"] for c in cells}) + [None]:
-        keep = [c for c in cells if rows is None or c["rows"] == rows]
-        print(f"\n{'all cells' if rows is None else f'{rows} training rows'} ({len(keep)} "
-              "cells): realised test cost ratio, geometric mean | worst | best | cells above "
-              "1.10")
-        for a, b in pairs:
-            r = np.array([(c["loss"][a] + floor) / (c["loss"][b] + floor) for c in keep
-                          if a in c["loss"] and b in c["loss"]])
-            if r.size:
-                print(f"  {a:>20} / {b:<20} {np.exp(np.mean(np.log(r))):6.3f} | {r.max():6.3f} "
-                      f"| {r.min():6.3f} | {int(np.sum(r > 1.10))} of {r.size}")
+    _print_cost_ratios(cells, pairs)
+    floor = S.COST_FLOOR  # a cell whose both costs are ~0 says nothing about the ratio
     worst = sorted(cells, key=lambda c: -(c["loss"]["pw_tuned"] + floor)
                    / (c["loss"]["sk_tuned"] + floor))[:8]
     print("\nworst cells of pw_tuned against scikit-learn's TunedThresholdClassifierCV:")
@@ -304,7 +319,6 @@ def cost_main(argv: list[str]) -> None:
 
 def cost_cell_multiclass(model, X, y, tr, te) -> dict:
     """Realised test cost per row of each multiclass rule (errors on true class j cost j + 1)."""
-    from probwrap import CostPolicyWrapper
 
     k = int(y.max()) + 1
     C = (1 - np.eye(k)) * (1 + np.arange(k))[:, None]
@@ -313,16 +327,9 @@ def cost_cell_multiclass(model, X, y, tr, te) -> dict:
         return float(C[y[te], np.asarray(act).astype(int)].mean())
 
     margins = not hasattr(model, "predict_proba")
-    inner = CalibrationWrapper(clone(model)) if margins else clone(model)
-    out = {}
+    out = _probwrap_cost_rules(model, X[tr], y[tr], X[te], C, realised)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        out["pw_tuned"] = realised(CostPolicyWrapper(
-            clone(inner), costs=C, strategy="tuned", random_state=0).fit(
-                X[tr], y[tr]).predict(X[te]))
-        cal = inner if margins else CalibrationWrapper(clone(model))
-        out["pw_calibrated_bayes"] = realised(CostPolicyWrapper(clone(cal), costs=C).fit(
-            X[tr], y[tr]).predict(X[te]))
         raw = clone(model).fit(X[tr], y[tr])
         if not margins:
             out["raw_bayes"] = realised(np.argmin(raw.predict_proba(X[te]) @ C, axis=1))
@@ -359,18 +366,7 @@ def cost_multiclass_main(argv: list[str]) -> None:
                       + ", ".join(f"{a} {b:.4f}" for a, b in loss.items()), flush=True)
     pairs = [("pw_tuned", "pw_calibrated_bayes"), ("pw_tuned", "raw_bayes"),
              ("pw_tuned", "argmax"), ("pw_calibrated_bayes", "argmax")]
-    floor = 1e-3
-    for rows in sorted({c["rows"] for c in cells}) + [None]:
-        keep = [c for c in cells if rows is None or c["rows"] == rows]
-        print(f"\n{'all cells' if rows is None else f'{rows} training rows'} ({len(keep)} "
-              "cells): realised test cost ratio, geometric mean | worst | best | cells above "
-              "1.10")
-        for a, b in pairs:
-            r = np.array([(c["loss"][a] + floor) / (c["loss"][b] + floor) for c in keep
-                          if a in c["loss"] and b in c["loss"]])
-            if r.size:
-                print(f"  {a:>20} / {b:<20} {np.exp(np.mean(np.log(r))):6.3f} | {r.max():6.3f} "
-                      f"| {r.min():6.3f} | {int(np.sum(r > 1.10))} of {r.size}")
+    _print_cost_ratios(cells, pairs)
 
 
 def main(argv: list[str]) -> None:

@@ -92,15 +92,9 @@ def study_data_sets(quick: bool = False, labels: bool = False):
             return importlib.import_module(f"causaldata.{name}").load_pandas().data
 
     def out(name, X, y_lab, event=None):
-        y_lab = np.asarray(y_lab).astype(str)
-        if labels:
-            return name, X, y_lab
-        if event is not None:
-            return name, X, (y_lab == event).astype(int)
-        return name, X, np.unique(y_lab, return_inverse=True)[1]
+        return W.task(name, X, y_lab, event, labels)
 
-    def words(flags, yes, no):
-        return np.where(np.asarray(flags).astype(float) > 0, yes, no)
+    words = W.flag_words
 
     d = cd("titanic")
     yield out("causaldata titanic survived (14 values)", _x(d, ["survived"]),

