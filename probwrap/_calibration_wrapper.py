@@ -451,6 +451,17 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         """Fit ``template`` (cloned) on held-out ``scores``: binary, multiclass, or one-vs-rest
         (``ovr`` the one-vs-rest scores when already computed; ``start`` a one-vs-rest fit on
         other rows to start the iterations from, see ``fit_one_vs_rest``)."""
+        with warnings.catch_warnings():
+            # the wrapper made these scores itself (log-odds of the model's probabilities, or
+            # its decision_function): a weak model's all lie in [0, 1], and PlattMap's advice to
+            # convert probabilities first does not apply
+            warnings.filterwarnings(
+                "ignore", message=r"PlattMap: every one of `scores` lies in \[0, 1\]"
+            )
+            return self._fit_map_checked(template, scores, y_index, w, ovr, start)
+
+    def _fit_map_checked(self, template, scores, y_index, w, ovr, start):
+        """:meth:`_fit_map` without the warning filter."""
         if (
             type(template) is PlattMap
             and self.response_ != "decision_function"
@@ -491,7 +502,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
                     np.concatenate([(y_index == k).astype(int) for k in cols]),
                     np.tile(w, cols.shape[0]),
                 )
-            self._fill_absent_classes(template, maps, pos, total, pooled, stacklevel=4)
+            self._fill_absent_classes(template, maps, pos, total, pooled, stacklevel=5)
         return maps
 
     def _fill_absent_classes(self, template, maps, pos, total, pooled, stacklevel) -> None:

@@ -18,7 +18,14 @@ from ._cost_policy_summary import (  # the prior-shift wrapper reads these two f
     SUMMARY_BINS,  # noqa: F401
     _summary_interval,
 )
-from ._heldout import HeldOutClassifierBase, HeldOutPredictions, _is_dask, check_fitted, is_frozen
+from ._heldout import (
+    HeldOutClassifierBase,
+    HeldOutPredictions,
+    _is_dask,
+    check_fitted,
+    check_rows_match,
+    is_frozen,
+)
 from ._validation import (
     check_labels,
     check_sample_weight,
@@ -303,6 +310,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         y_arr = column_or_1d(y, warn=True)
         check_target_labels(y_arr, "y")
         check_classification_targets(y_arr)
+        check_rows_match(X, y_arr.shape[0])
         sw = check_sample_weight(sample_weight, y_arr.shape[0]) if sample_weight is not None else None
         y_index, classes = check_labels(y_arr, name="y")
         if not hasattr(self.estimator, "predict_proba"):
@@ -310,7 +318,10 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
                 f"`estimator` ({type(self.estimator).__name__}) has no predict_proba; wrap it in "
                 "CalibrationWrapper, which turns decision_function scores into probabilities."
             )
-        est_params, _ = self._route_fit_params(sw, dict(fit_params))
+        est_params, _ = self._route_fit_params(
+            sw, dict(fit_params),
+            weights_used_here=f"strategy={self.strategy!r} fits nothing else on these rows",
+        )
         estimator = clone(self.estimator).fit(X, y_arr, **est_params)
         self.estimator_ = estimator
         self.classes_ = np.asarray(estimator.classes_)

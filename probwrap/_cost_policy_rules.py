@@ -177,12 +177,15 @@ class _RuleFitting:
                 )
             return self.classes_.copy()
         labels = np.asarray(self.actions)
+        if labels.dtype.kind == "U" and not all(isinstance(a, str) for a in self.actions):
+            # ["ship", 1]: NumPy would make every label a string; keep each label's own type
+            labels = np.asarray(self.actions, dtype=object)
         if labels.ndim != 1 or labels.shape[0] != n_actions:
             raise ValueError(
                 f"`actions` must have one label per column of `costs` ({n_actions}); got shape "
                 f"{labels.shape}."
             )
-        if np.unique(labels).shape[0] != labels.shape[0]:
+        if len({plain(a) for a in labels.tolist()}) != labels.shape[0]:
             raise ValueError(f"`actions` must be distinct; got {labels.tolist()}.")
         return labels
 
@@ -307,7 +310,10 @@ class _RuleFitting:
 
 
 def _scalar_cutoff(cutoff: Any) -> bool:
-    return isinstance(cutoff, numbers.Real) and not isinstance(cutoff, bool)
+    """A single number: a Python or NumPy real, or a 0-d array of one (not a bool)."""
+    if isinstance(cutoff, np.ndarray) and cutoff.ndim == 0:
+        return cutoff.dtype.kind in "iuf"
+    return isinstance(cutoff, numbers.Real) and not isinstance(cutoff, (bool, np.bool_))
 
 
 def _check_cutoff(cutoff: Any) -> float:

@@ -23,12 +23,13 @@ import warnings
 from typing import Any
 
 import numpy as np
+from joblib import Parallel, delayed
 from sklearn import get_config
 from sklearn.base import BaseEstimator, ClassifierMixin, MetaEstimatorMixin, clone
 from sklearn.exceptions import NotFittedError
 from sklearn.frozen import FrozenEstimator
-from sklearn.model_selection import StratifiedKFold, check_cv, cross_val_predict
-from sklearn.utils import get_tags
+from sklearn.model_selection import StratifiedKFold, check_cv
+from sklearn.utils import _safe_indexing, get_tags, indexable
 from sklearn.utils.metadata_routing import MetadataRouter, MethodMapping, process_routing
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import column_or_1d, has_fit_parameter
@@ -114,6 +115,48 @@ def _predict_in_chunks(method: Any, X: Any) -> np.ndarray:
     return out
 
 
+def row_count(value: Any) -> int | None:
+    """Row count of ``value`` when it has one (arrays, frames, sparse matrices, lists), else None."""
+    shape = getattr(value, "shape", None)
+    if shape is not None:
+        try:
+            return int(shape[0]) if len(shape) else None
+        except TypeError:  # a lazy frame with an unknown row count
+            return None
+    if isinstance(value, (list, tuple)):
+        return len(value)
+    return None
+
+
+def check_rows_match(X: Any, n: int) -> None:
+    """Raise if ``X`` has a row count other than ``n`` (the number of labels)."""
+    n_x = row_count(X)
+    if n_x is not None and n_x != n:
+        raise ValueError(
+            f"`X` has {n_x} rows but `y` has {n} labels; give one label per row of `X` "
+            "(inconsistent numbers of samples)."
+        )
+
+
+def _fit_predict_fold(
+    estimator: Any, X: Any, y: np.ndarray, train: np.ndarray, test: np.ndarray,
+    params: dict, response: str,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Fit a clone of ``estimator`` on the ``train`` rows (labels as given) and return its
+    ``classes_`` and ``response`` on the ``test`` rows; row-wise ``params`` follow the rows."""
+    n = y.shape[0]
+    fold_params = {
+        key: (_safe_indexing(value, train)
+              if not isinstance(value, (str, dict)) and row_count(value) == n else value)
+        for key, value in params.items()
+    }
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message="Number of classes in training fold")
+        model = clone(estimator).fit(_safe_indexing(X, train), y[train], **fold_params)
+        out = np.asarray(getattr(model, response)(_safe_indexing(X, test)), dtype=float)
+    return np.asarray(model.classes_), out
+
+
 def is_frozen(estimator: Any) -> bool:
     """Whether ``estimator`` is an already-fitted :class:`~sklearn.frozen.FrozenEstimator`."""
     return isinstance(estimator, FrozenEstimator)
@@ -151,8 +194,14 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                 f"(train, test) index pairs; got {plain(cv)!r} ({exc})."
             ) from exc
 
-    def _route_fit_params(self, sample_weight: Any, fit_params: dict) -> tuple[dict, dict]:
-        """Split fit parameters into those for the estimator and those for the splitter."""
+    def _route_fit_params(
+        self, sample_weight: Any, fit_params: dict, *, weights_used_here: str | None = None
+    ) -> tuple[dict, dict]:
+        """Split fit parameters into those for the estimator and those for the splitter.
+
+        ``weights_used_here``: ``None`` when the wrapper's own step uses ``sample_weight``
+        (held-out rows); otherwise why it does not, for the warning when the estimator takes none.
+        """
         if get_config().get("enable_metadata_routing", False):
             routed = process_routing(self, "fit", sample_weight=sample_weight, **fit_params)
             return dict(routed.estimator.fit), dict(routed.splitter.split)
@@ -160,11 +209,18 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         if sample_weight is not None:
             if has_fit_parameter(self.estimator, "sample_weight"):
                 params["sample_weight"] = sample_weight
-            else:
+            elif weights_used_here is None:
                 warnings.warn(
                     f"`estimator` ({type(self.estimator).__name__}) does not accept "
                     "sample_weight; it is fitted without weights, and the weights are used only "
                     "by the wrapper's own step.",
+                    UserWarning,
+                    stacklevel=3,
+                )
+            else:
+                warnings.warn(
+                    f"`sample_weight` is ignored: `estimator` ({type(self.estimator).__name__}) "
+                    f"does not accept it, and {weights_used_here}.",
                     UserWarning,
                     stacklevel=3,
                 )
@@ -212,6 +268,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         check_target_labels(y_arr, "y")
         check_classification_targets(y_arr)
         n = y_arr.shape[0]
+        check_rows_match(X, n)
         sw = None
         if sample_weight is not None:
             sw = rescale_extreme_weights(check_sample_weight(sample_weight, n), type(self).__name__)
@@ -338,26 +395,41 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         )
 
     def _cross_fit(self, X, y, splits, est_params, response, classes) -> np.ndarray:
-        with warnings.catch_warnings():
-            warnings.filterwarnings("ignore", message="Number of classes in training fold")
-            values = cross_val_predict(
-                self.estimator,
-                X,
-                y,
-                cv=splits,
-                n_jobs=self.n_jobs,
-                method=response,
-                params=est_params or None,
-            )
-        values = np.asarray(values, dtype=float)
-        if response == "decision_function" and values.ndim == 2:
-            # A class absent from a training fold gets the lowest float from scikit-learn; give
-            # it instead a score far below every other score of that row.
-            missing = values <= np.finfo(float).min / 2
-            if missing.any():
-                present = np.where(missing, np.inf, values)
-                floor = present.min(axis=1, keepdims=True) - 50.0
-                values = np.where(missing, floor, values)
+        """Held-out ``response`` of a clone fitted on each split's training rows.
+
+        The clones are fitted on the labels as given (not re-coded as 0..k-1), so settings of
+        the estimator that name classes (``class_weight={"fraud": 5, ...}``, a constant
+        prediction) keep their meaning. A class absent from a training part gets probability 0
+        in its column, or a score 50 below the row's lowest score.
+        """
+        X = indexable(X)[0]  # sparse formats without row indexing become CSR, as in scikit-learn
+        results = Parallel(n_jobs=self.n_jobs)(
+            delayed(_fit_predict_fold)(self.estimator, X, y, train, test, est_params, response)
+            for train, test in splits
+        )
+        n = y.shape[0]
+        k = classes.shape[0]
+        values = None
+        for (_, test), (fold_classes, out) in zip(splits, results, strict=True):
+            cols = np.array([np.flatnonzero(classes == c)[0] for c in fold_classes])
+            if out.ndim == 1 and k == 2 and fold_classes.shape[0] == 2:
+                block = out
+            elif out.ndim == 1:
+                raise ValueError(
+                    f"Only {fold_classes.shape[0]} classes in a training fold but {k} in all "
+                    f"rows: {response} of such a fold gives one score per row, which cannot "
+                    "stand for every class. Use fewer folds or more rows of the rare classes."
+                )
+            else:
+                block = np.zeros((out.shape[0], k))
+                block[:, cols] = out
+                missing = np.setdiff1d(np.arange(k), cols)
+                if response != "predict_proba" and missing.size:
+                    # a score far below every other score of that row
+                    block[:, missing] = out.min(axis=1, keepdims=True) - 50.0
+            if values is None:
+                values = np.empty((n,) + block.shape[1:], dtype=float)
+            values[test] = block
         return values
 
     # -- prediction helpers ----------------------------------------------------------------

@@ -109,7 +109,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         (then every row given to ``fit`` is held-out data).
     target_prior : array-like of shape (n_classes,), dict or None, default=None
         Known class priors of the deployment population: an array in ``classes_`` order, a
-        dict keyed by class label, or (binary only) a float, the prevalence of ``classes_[1]``.
+        dict or pandas Series keyed by class label (such as ``y.value_counts(normalize=True)``),
+        or (binary only) a float, the prevalence of ``classes_[1]``.
         When given it takes precedence over the priors estimated by ``adapt``. A class given
         a share of 0 gets probability exactly 0 on every row, with a warning at ``fit``.
     method : {"em", "bbse", "bbse_soft", "acc", "pacc"}, default="em"
@@ -317,8 +318,17 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             return None
         classes = self.classes_
         k = classes.shape[0]
+        known = {c.item() if hasattr(c, "item") else c for c in classes}
+        if (hasattr(prior, "index") and hasattr(prior, "to_dict")
+                and getattr(prior, "ndim", 1) == 1):
+            # a pandas Series (e.g. y.value_counts(normalize=True)) is read by its labels, like
+            # a dict; only a default 0..k-1 index on labels that are not 0..k-1 is positional
+            keys = list(prior.index)
+            if not (set(keys) - known) or keys != list(range(len(keys))):
+                prior = prior.to_dict()
+            else:
+                prior = np.asarray(prior)
         if isinstance(prior, Mapping):
-            known = {c.item() if hasattr(c, "item") else c for c in classes}
             unknown = [key for key in prior if key not in known]
             if unknown:
                 raise ValueError(
@@ -364,7 +374,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             Labels.
         sample_weight : array-like of shape (n,), default=None
             Row weights; passed to the estimator where it accepts them, and used for
-            ``source_prior_``, the calibration and the confusion matrix.
+            ``source_prior_``, the calibration and the confusion matrix. As in ``adapt``, the
+            shift test and the interval count Kish's effective number of labelled rows, so
+            the scale of the weights changes nothing (docs/prior_shift.md, "How sure is the
+            estimate, and has anything moved?").
         **fit_params : dict
             Further parameters for the estimator's ``fit``.
 
@@ -472,7 +485,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         X : array-like, DataFrame, sparse matrix, ...
             Unlabelled rows from the deployment population, in the estimator's input format.
         sample_weight : array-like of shape (n,), default=None
-            Frequency weights of the rows.
+            Relative weights of the rows: only their ratios matter. The rows are weighed by
+            them, and the evidence they carry (the shrinkage toward the source prior, the shift
+            test, the interval) is counted as Kish's effective number of rows,
+            (sum w)^2 / sum w^2, so multiplying every weight by a constant changes nothing and
+            integer weights are not read as duplicated rows (pass the rows duplicated if they
+            really are independent copies; see
+            docs/prior_shift.md, "How sure is the estimate, and has anything moved?").
 
         Returns
         -------

@@ -114,12 +114,18 @@ def check_scores(scores: Any, *, name: str = "scores", ndim: int | None = 1) -> 
     return arr
 
 
-def check_proba(proba: Any, *, name: str = "y_prob", ndim: int | None = None) -> np.ndarray:
+def check_proba(
+    proba: Any, *, name: str = "y_prob", ndim: int | None = None, column_as_1d: bool = False
+) -> np.ndarray:
     """Return ``proba`` as a float array with every entry in [0, 1].
 
-    2-d input must have rows that sum to one (within 1e-6).
+    2-d input must have rows that sum to one (within 1e-6). With ``column_as_1d``, a single
+    column (n, 1) — such as a one-column DataFrame — is read as the positive class's
+    probabilities, shape (n,), as scikit-learn's metrics read it.
     """
     arr = _as_float_array(proba, name)
+    if column_as_1d and arr.ndim == 2 and arr.shape[1] == 1:
+        arr = arr[:, 0]
     if ndim is not None and arr.ndim != ndim:
         raise ValueError(f"`{name}` must be {ndim}-d; got shape {arr.shape}.")
     if arr.ndim not in (1, 2):

@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_same_length, plain
+from .._validation import check_same_length, check_target_labels, plain
 from ._bootstrap import bootstrap_interval
 from ._calibration_tests import smooth_calibration_error
 from ._inputs import prepare_binary
@@ -359,6 +359,7 @@ def calibration_by_group(
     if (isinstance(n_resamples, bool) or not isinstance(n_resamples, numbers.Integral)
             or n_resamples < 0 or n_resamples == 1):
         raise ValueError(f"`n_resamples` must be 0 or a whole number >= 2; got {plain(n_resamples)!r}.")
+    check_target_labels(g, "groups", object_numbers=True)  # mixed numbers and strings
     keys, inverse = np.unique(g, return_inverse=True)
     inverse = inverse.reshape(-1)
     args = (cutoff, matrix, float(min_rows), float(min_events), int(n_resamples),
@@ -367,7 +368,8 @@ def calibration_by_group(
     computed: list[str] = []  # warnings met while computing, by group
     for k, key in enumerate(keys):
         rows = inverse == k
-        label = key.item() if hasattr(key, "item") else key
+        # dates and durations stay NumPy scalars (their .item() is integer nanoseconds)
+        label = key.item() if hasattr(key, "item") and g.dtype.kind not in "mM" else key
         checks.append(_check_one(label, y[rows], p[rows], w[rows], *args, computed))
     overall = _check_one("all", y, p, w, *args, computed)
     judged = sorted((c for c in checks if c.judged), key=lambda c: -np.nan_to_num(

@@ -121,9 +121,7 @@ def class_indices(y_true: Any, n_classes: int, labels: Any = None) -> np.ndarray
 
 
 def _prepare_proba(y_true: Any, y_prob: Any, sample_weight: Any) -> tuple[np.ndarray, np.ndarray]:
-    p = check_proba(y_prob, name="y_prob")
-    if p.ndim == 2 and p.shape[1] == 1:
-        p = p[:, 0]
+    p = check_proba(y_prob, name="y_prob", column_as_1d=True)
     if p.ndim == 2 and p.shape[1] < 2:
         raise ValueError(f"`y_prob` must have at least two columns when 2-d; got {p.shape}.")
     n = check_same_length(("y_prob", p), ("y_true", np.asarray(y_true)))
