@@ -13,6 +13,7 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
+from sklearn.utils import check_random_state
 
 from ._column_models import ProbabilityColumn
 from ._cost_policy_summary import CURVE_POINTS, SMALL_HELDOUT_ROWS, _heldout_summary
@@ -75,6 +76,15 @@ def recalibrated_plugin_cutoff(p, y, w, t0: float, random_state: Any) -> tuple[f
 
     from ._calibration_wrapper import CalibrationWrapper
 
+    if random_state is not None:
+        # a bad seed is the caller's error, not a map that "cannot be fitted" (below)
+        try:
+            check_random_state(random_state)
+        except ValueError as exc:
+            raise ValueError(
+                "`random_state` must be None, an int in [0, 2**32 - 1] or a "
+                f"numpy.random.RandomState; got {plain(random_state)!r}."
+            ) from exc
     keep = w > 0
     n = int(np.count_nonzero(keep))
     if n > RECALIBRATED_ANCHOR_MAX_ROWS or np.unique(y[keep]).shape[0] < 2:

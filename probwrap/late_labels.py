@@ -173,7 +173,8 @@ def labels_at_horizon(
     ------
     ValueError
         When every row is still open, or ``G(horizon) = 0`` (nobody observed for ``horizon``
-        that long without the event): the outcome cannot be estimated.
+        that long without the event, for instance a horizon at or beyond the longest time
+        observed): the outcome cannot be estimated.
 
     Examples
     --------
@@ -207,6 +208,14 @@ def labels_at_horizon(
         raise ValueError(
             f"No row was observed for `horizon`={h:g} without the event while others were; "
             "the probability of still being observed is 0 there. Choose a shorter horizon."
+        )
+    if g_h <= 0:
+        # nobody is known to be event-free at the horizon: every known outcome would be an
+        # event, and the share of rows still observed there is 0
+        raise ValueError(
+            f"No row was observed beyond `horizon`={h:g} without the event (the longest time "
+            f"observed is {float(t[w > 0].max()):g}); the outcome 'event within the horizon' "
+            "cannot be estimated there. Choose a shorter horizon."
         )
     ipcw = np.zeros(t.shape[0])
     ipcw[positive] = 1.0 / g_minus[positive]

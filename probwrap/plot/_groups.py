@@ -118,7 +118,7 @@ class GroupReliabilityDisplay:
             key = label.item() if hasattr(label, "item") else label
             ww = w[rows]
             kw = {"n_bins": n_bins, "strategy": strategy, "sample_weight": ww}
-            if p.ndim == 1 and labels is not None:
+            if labels is not None:  # 1-d: the two labels; 2-d: the labels of the columns
                 kw["labels"] = labels
             tables[key] = reliability_table(y_arr[rows], p[rows], **kw)
             errors[key] = float(expected_calibration_error(y_arr[rows], p[rows], **kw))

@@ -158,7 +158,8 @@ def write_report(
         labels). Binary: ``(negative, positive)``, named in the cost table and wherever the
         text speaks of the positive class (default: the labels, or "negative"/"positive" for
         0/1 labels). General form: with ``y_true``/``y_prob``, labels are column indices
-        ``0..k-1`` or any labels whose sorted distinct values match the columns.
+        ``0..k-1``, labels named in ``class_names`` (matched to the columns through it), or
+        any labels whose sorted distinct values match the columns.
     progress : callable, optional
         ``progress(step, done, total)`` is called before each long step (``step`` names it:
         "calibration metrics", "decision rules", "prevalence", "prevalence by batch") and once

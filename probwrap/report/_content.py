@@ -471,7 +471,11 @@ def collect_content(
     if groups is not None:
         from ..metrics import calibration_by_group
 
-        cutoff = content.chosen_cutoff
+        # the decision columns are for the rule the report recommends (the one the reader is
+        # told to use), else the chosen one
+        rec = content.recommendation
+        cutoff = rec.cutoff if rec is not None and rec.cutoff is not None else (
+            content.chosen_cutoff)
         content.group_checks = calibration_by_group(
             y01, p, groups, cutoff=cutoff,
             costs=content.cost_matrix if cutoff is not None else None, sample_weight=w,

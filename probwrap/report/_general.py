@@ -335,8 +335,15 @@ def general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_cos
             raise ValueError(f"`y_true` has {y_arr.shape[0]} rows but `y_prob` has "
                              f"{proba.shape[0]}; they must match.")
         found = np.unique(y_arr)
+        named = None
+        if class_names is not None and len(class_names) == k:
+            named = np.asarray([str(c) for c in class_names])
         if y_arr.dtype.kind in "iu" and found.min() >= 0 and found.max() < k:
             classes = np.arange(k)
+        elif named is not None and np.isin(found.astype(str), named).all():
+            # labels named by `class_names`, which names the columns in their order
+            classes = named
+            y_arr = y_arr.astype(str)
         elif found.shape[0] == k:
             classes = found
         else:
