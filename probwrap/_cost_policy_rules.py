@@ -218,6 +218,34 @@ class _RuleFitting:
             )
         return 1, check_capacity(self.capacity)
 
+    def _warn_constant(self, p, w, fold) -> None:
+        """Say so when the model gives every held-out row of a fold the same probability: it
+        does not rank the rows, and the tuned rule can only act on all of them or none."""
+        import warnings
+
+        keep = w > 0
+        q, f = p[keep], np.asarray(fold)[keep]
+        if q.size < 2:
+            return
+        order = np.lexsort((q, f))
+        qs, fs = q[order], f[order]
+        same_fold = fs[1:] == fs[:-1]
+        if np.any(qs[1:][same_fold] != qs[:-1][same_fold]):
+            return  # some fold ranks its rows
+        acts = "all of them" if self.cutoff_ < q.min() else (
+            "none of them" if self.cutoff_ >= q.max() else "the rows of some folds")
+        values = np.unique(q)
+        shown = f"the same probability ({float(values[0]):.6g})" if values.size == 1 else (
+            f"the same probability within each fold ({float(values[0]):.4g} to "
+            f"{float(values[-1]):.4g})")
+        warnings.warn(
+            f"{type(self).__name__}: the model gives every held-out row {shown}; it does not "
+            f"rank the rows, so the tuned rule acts on {acts} "
+            f"(cutoff {self.cutoff_:.6g}). Check the model and its inputs.",
+            UserWarning,
+            stacklevel=4,
+        )
+
     def _fit_cutoff(self, ho, p, matrix, share) -> None:
         # p: the held-out probabilities of the second class (None without held-out rows)
         if self.strategy == "fixed":
@@ -249,6 +277,8 @@ class _RuleFitting:
                                          sample_weight=ho.sample_weight, anchor=anchor).cutoff
             if getattr(ho, "from_tally", False) and ho.response == "predict_proba":
                 self.cutoff_ = _cutoff_at_bin_edge(self.tally_, self.cutoff_)
+            else:
+                self._warn_constant(p, ho.sample_weight, ho.fold)
             self.cost_curve_ = res
             del res
             if keep:

@@ -197,3 +197,27 @@ def test_zero_d_array_cutoff_and_mixed_action_labels(cancer):
     out = mixed.predict(X[150:])
     assert {type(v) for v in out.tolist()} <= {str, int}
     assert set(out.tolist()) <= {"ship", 1} and 1 in out.tolist()
+
+
+def test_tuned_rule_on_a_model_that_does_not_rank_the_rows_says_so():
+    """A constant model (every held-out row the same probability): the least-cost rule can only
+    act on all rows or none, and a warning says which (scikit-learn's
+    TunedThresholdClassifierCV refuses such a model)."""
+    X = np.zeros((100, 2))
+    y = np.r_[np.zeros(80), np.ones(20)].astype(int)
+    cross = CostPolicyWrapper(DummyClassifier(strategy="prior"), costs={"fp": 1, "fn": 10},
+                              strategy="tuned", cv=3)
+    with pytest.warns(UserWarning, match=r"the same probability within each fold .*acts on "
+                                         r"all of them"):
+        cross.fit(X, y)
+    assert np.all(cross.predict(X) == 1)  # 0.2 * 10 > 0.8 * 1: acting on all is cheaper
+    frozen = CostPolicyWrapper(FrozenEstimator(DummyClassifier(strategy="prior").fit(X, y)),
+                               costs={"fp": 1, "fn": 2}, strategy="tuned")
+    with pytest.warns(UserWarning, match=r"the same probability \(0.2\).*acts on none"):
+        frozen.fit(X, y)
+    assert np.all(frozen.predict(X) == 0)  # 0.2 * 2 < 0.8 * 1
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # a model that ranks the rows: no such warning
+        X2, y2 = load_breast_cancer(return_X_y=True)
+        CostPolicyWrapper(_lr(), costs={"fp": 1, "fn": 3}, strategy="tuned", cv=3,
+                          random_state=0).fit(X2[:300], y2[:300])
