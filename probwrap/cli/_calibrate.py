@@ -240,10 +240,13 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
 
 
 def _apply(args: argparse.Namespace) -> int:
+    from pandas.api.types import is_numeric_dtype
+
     with Stages("calibrate", ["reading", "calibrating", "writing"]) as stages:
         stages.start("reading")
         cal_map, description, scale = load_map(args.map, args.scale)
-        frame = read_table(args.scores, exact=[args.score_column])
+        # every column is written out as it was read: CSV columns as their text
+        frame = read_table(args.scores, exact=[args.score_column], as_text=True)
         scores = read_scores(frame, args.score_column, args.scores, scale=scale)
         if args.output_column in frame.columns:
             raise DataError(
@@ -259,7 +262,11 @@ def _apply(args: argparse.Namespace) -> int:
         if not np.all(np.isfinite(out)):
             raise DataError(f"{args.map}: the map gives probabilities that are not finite")
         frame = frame.copy()
-        frame[args.score_column] = scores  # numbers (a CSV column was read as text, exactly)
+        frame.attrs.clear()
+        if not is_numeric_dtype(frame[args.score_column].dtype):
+            # a CSV column read as text: written as the numbers it holds (dot decimal mark);
+            # a Parquet column of numbers keeps its type (float32 stays float32)
+            frame[args.score_column] = scores
         frame[args.output_column] = out
         stages.start("writing")
         write_table(frame, args.out)

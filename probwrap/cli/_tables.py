@@ -20,12 +20,20 @@ from ._common import DataError, clean, one_line, require, shown, table_kind
 __all__ = ["read_table", "no_column", "numeric_column", "probability_column", "read_labels"]
 
 
-def read_table(path: str | Path, *, exact: Iterable[str] = ()) -> Any:
+def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = False) -> Any:
     """Read a CSV or Parquet file into a pandas DataFrame (Parquet by extension; CSV otherwise).
 
     The columns named in ``exact`` are read from CSV as text, so :func:`numeric_column` turns
     them into floats with a correctly rounded parser (a number written at full precision reads
     back as the same float, in every pandas version).
+
+    ``as_text=True`` (a table that is written out again, as by ``calibrate apply``): every CSV
+    column is kept as the text it holds, with nothing taken for a missing value in the other
+    columns (``NA``, ``None``, ``000123`` and ``12345678901234567890`` stay as written), and
+    decimal commas stay commas (:func:`numeric_column` reads them); a Parquet file's index,
+    when it has a named or non-default one, becomes an ordinary column so that it is written
+    out too. The columns in ``exact`` still read empty fields and pandas' usual missing-value
+    words as missing.
     """
     pd = require("pandas")
     path = Path(path)
@@ -45,13 +53,22 @@ def read_table(path: str | Path, *, exact: Iterable[str] = ()) -> Any:
     try:
         if table_kind(path) == "Parquet":
             frame = pd.read_parquet(path)
+            if as_text and not _plain_index(frame.index, pd):
+                frame = frame.reset_index()
         else:
             exact = list(exact)
             encoding = _csv_encoding(path)
             sep, decimal = _csv_dialect(path, encoding)
-            frame = pd.read_csv(path, dtype=dict.fromkeys(exact, str), sep=sep, decimal=decimal,
-                                encoding=encoding)
-            if decimal == ",":  # columns read as text keep their decimal commas: make them dots
+            text_options: dict[str, Any] = {}
+            if as_text:
+                # only the columns that are parsed know missing values; the rest pass through
+                text_options = {"keep_default_na": False,
+                                "na_values": {c: sorted(_MISSING_WORDS) for c in exact}}
+            frame = _read_csv(pd, path, dtype=str if as_text else dict.fromkeys(exact, str),
+                              sep=sep, decimal=decimal, encoding=encoding, **text_options)
+            if as_text:  # kept as written; numeric_column reads the decimal commas
+                frame.attrs["decimal"] = decimal
+            elif decimal == ",":  # columns read as text keep their decimal commas: make dots
                 for column in set(exact) & set(frame.columns):
                     frame[column] = frame[column].str.replace(",", ".", regex=False)
             header = _csv_header(path, encoding, sep)
@@ -80,6 +97,24 @@ def read_table(path: str | Path, *, exact: Iterable[str] = ()) -> Any:
     if frame.shape[0] == 0:
         raise DataError(f"{path}: the file has a header but no rows")
     return frame
+
+
+#: the words pandas reads as a missing value by default (its documented ``na_values`` list)
+_MISSING_WORDS = frozenset({
+    "", "#N/A", "#N/A N/A", "#NA", "-1.#IND", "-1.#QNAN", "-NaN", "-nan", "1.#IND", "1.#QNAN",
+    "<NA>", "N/A", "NA", "NULL", "NaN", "None", "n/a", "nan", "null",
+})
+
+
+def _plain_index(index: Any, pd: Any) -> bool:
+    """True for the unnamed 0, 1, 2, ... index that holds no data of the file."""
+    return (isinstance(index, pd.RangeIndex) and index.name is None and index.start == 0
+            and index.step == 1)
+
+
+def _read_csv(pd: Any, path: Path, **options: Any) -> Any:
+    """``pandas.read_csv`` with the options the command line always uses."""
+    return pd.read_csv(path, **options)
 
 
 #: extensions of files that are not tables this command reads, and what they are
@@ -182,6 +217,9 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str) -> n
         values = series.to_numpy(dtype=float, na_value=np.nan)
     else:
         raw = series.to_numpy(dtype=object)
+        if frame.attrs.get("decimal") == ",":  # a table kept as written (read_table as_text)
+            raw = np.array([v.replace(",", ".") if isinstance(v, str) else v for v in raw],
+                           dtype=object)
         try:
             values = np.array(
                 ["nan" if v is None or v is pd.NA or (isinstance(v, float) and v != v) else v
