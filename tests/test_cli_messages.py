@@ -173,7 +173,7 @@ def test_pandas_parse_error_is_one_line(tmp_path, capsys):
     code, _, err = run(capsys, "cutoff", "--scores", tmp_path / "ragged.csv", "--score-column",
                        "risk", "--label-column", "damaged", "--cost-fp", "1", "--cost-fn", "2")
     line = _one_line_error(code, err, "cutoff")
-    assert "cannot be read as CSV" in line
+    assert "ragged.csv: line 3 has 4 fields but the header has 2" in line
 
 
 # -- options agree across verbs ------------------------------------------------------------------

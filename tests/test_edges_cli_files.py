@@ -167,3 +167,33 @@ def test_class_columns_named_otherwise_than_the_labels(tmp_path, capsys, wine_pr
         _class_report(tmp_path / "held.csv", tmp_path / "r.html", "p barolo,p barolo,p barbera")
     assert info.value.code == 2
     assert "--class-columns names 'p barolo' more than once" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("text, line", [
+    ("risk,outcome\n0,42,yes\n0,17,no\n", 2),   # decimal commas: pandas took "0" as an index
+    ("risk\n0,42\n0,17\n", 2),                   # one column, no separator in the header
+    ("risk,outcome\n0.42,yes\n0.17,no\n0,05,no\n", 4),  # a later row only
+])
+def test_row_with_more_fields_than_the_header_is_refused(tmp_path, capsys, text, line):
+    """Rows with one field more than the header used to shift every column silently (the first
+    field became pandas' row index): 0,42 was read as the score 42 or the label 42."""
+    path = tmp_path / "comma.csv"
+    path.write_text(text)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    header = text.split("\n")[0].count(",") + 1
+    assert f"comma.csv: line {line} has {header + 1} fields but the header has {header}" in err
+    assert "decimal comma" in err and "';'" in err
+
+
+def test_trailing_separator_on_every_row_keeps_the_columns(tmp_path, capsys, table):
+    """An empty last field that the header lacks (a separator at the end of each line) is
+    dropped: the columns are read where the header puts them."""
+    table.to_csv(tmp_path / "plain.csv", index=False)
+    lines = (tmp_path / "plain.csv").read_text().splitlines()
+    (tmp_path / "trailing.csv").write_text(
+        "\n".join([lines[0], *(line + "," for line in lines[1:])]) + "\n")
+    code_a, out_a, _ = _cutoff(capsys, tmp_path / "plain.csv")
+    code_b, out_b, err_b = _cutoff(capsys, tmp_path / "trailing.csv")
+    assert code_a == code_b == 0, err_b
+    assert out_a.replace("plain.csv", "X") == out_b.replace("trailing.csv", "X")

@@ -72,6 +72,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                 for column in set(exact) & set(frame.columns):
                     frame[column] = frame[column].str.replace(",", ".", regex=False)
             header = _csv_header(path, encoding, sep)
+    except DataError:
+        raise
     except pd.errors.EmptyDataError:
         raise DataError(f"{path}: the file is empty") from None
     except UnicodeDecodeError as exc:
@@ -113,8 +115,53 @@ def _plain_index(index: Any, pd: Any) -> bool:
 
 
 def _read_csv(pd: Any, path: Path, **options: Any) -> Any:
-    """``pandas.read_csv`` with the options the command line always uses."""
-    return pd.read_csv(path, **options)
+    """``pandas.read_csv`` that refuses a row with more fields than the header.
+
+    Left to itself pandas takes the first field of such rows as the row index and shifts every
+    column by one (a one-column file written with decimal commas, ``0,42``, reads as 42). Extra
+    fields that are all empty (a separator at the end of each line) are dropped.
+    """
+    import warnings
+
+    try:
+        with warnings.catch_warnings():
+            warnings.filterwarnings("error", message="Length of header",
+                                    category=pd.errors.ParserWarning)
+            return pd.read_csv(path, index_col=False, **options)
+    except (pd.errors.ParserWarning, pd.errors.ParserError):
+        _check_field_counts(path, options.get("sep", ","), options.get("encoding", "utf-8-sig"))
+        raise
+
+
+def _check_field_counts(path: Path, sep: str, encoding: str) -> None:
+    """A DataError naming the first line with more (non-empty) fields than the header."""
+    import csv
+
+    header: int | None = None
+    try:
+        with open(path, encoding=encoding, newline="") as handle:
+            reader = csv.reader(handle, delimiter=sep)
+            for row in reader:
+                if not any(field.strip() for field in row):
+                    continue
+                if header is None:
+                    header = len(row)
+                elif len(row) > header and any(field.strip() for field in row[header:]):
+                    break
+            else:
+                return
+    except (OSError, UnicodeError, csv.Error):
+        return
+    hint = (
+        "; a number written with a decimal comma in a comma-separated file (0,42) makes two "
+        "fields: write it with a decimal point, or separate the fields with ';' (a "
+        "semicolon-separated file may use decimal commas)"
+        if sep == "," else ""
+    )
+    raise DataError(
+        f"{path}: line {reader.line_num} has {len(row)} fields but the header has {header}, so "
+        f"the columns cannot be told apart{hint}"
+    )
 
 
 #: extensions of files that are not tables this command reads, and what they are
