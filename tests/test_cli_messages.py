@@ -403,3 +403,36 @@ def test_cutoff_says_why_the_bayes_and_kept_cutoffs_are_missing(files, capsys):
     assert code == 0 and "Traceback" not in err
     assert "at Bayes cutoff" not in out and "kept by CostPolicyWrapper" not in out
     assert "probwrap cutoff: warning: no Bayes cutoff" in err and "c_fp - c_tn = 0" in err
+
+
+# -- seeds ---------------------------------------------------------------------------------------
+_SEED_VERBS = {
+    "calibrate fit": ["calibrate", "fit", "--scores", "held.csv", "--score-column", "risk",
+                      "--label-column", "damaged", "--out", "m.json"],
+    "cutoff": ["cutoff", "--scores", "held.csv", "--score-column", "risk", "--label-column",
+               "damaged", "--cost-fp", "3", "--cost-fn", "40"],
+    "prevalence": ["prevalence", "--unlabelled", "week.csv", "--score-column", "risk",
+                   "--source-prevalence", "0.3"],
+    "report": ["report", "--scores", "held.csv", "--score-column", "risk", "--label-column",
+               "damaged", "--out", "r.html"],
+    "demo": ["demo", "--out", "d"],
+}
+
+
+@pytest.mark.parametrize("verb", sorted(_SEED_VERBS))
+@pytest.mark.parametrize("seed", ["-1", "4294967296", "1.5"])
+def test_seed_out_of_range_is_a_usage_error_on_every_verb(capsys, tmp_path, monkeypatch, verb,
+                                                          seed):
+    """NumPy takes seeds 0 .. 2**32 - 1: -1 used to end in a traceback (demo) or a message that
+    blamed the data file, and 2**32 changed cutoff's answer without a word."""
+    monkeypatch.chdir(tmp_path)
+    code, line = usage_error(capsys, *_SEED_VERBS[verb], "--seed", seed)
+    assert code == 2
+    assert line.startswith(f"probwrap {verb}: error: argument --seed:")
+    assert "0 to 4294967295 (2**32 - 1)" in line
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_largest_seed_is_accepted():
+    args = build_parser().parse_args(["demo", "--out", "d", "--seed", str(2**32 - 1)])
+    assert args.seed == 2**32 - 1

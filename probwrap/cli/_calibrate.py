@@ -23,6 +23,7 @@ from .._validation import plain
 from ._common import (
     DataError,
     add_positive_label_flag,
+    add_seed_flag,
     check_ranking,
     check_row_count,
     clean,
@@ -314,7 +315,7 @@ def register(subparsers: Any) -> None:
         "--folds", type=whole_number(2), default=5, metavar="K",
         help="cross-validation folds used by --method auto (default 5)",
     )
-    fit.add_argument("--seed", type=int, default=0, help="seed of the folds (default 0)")
+    add_seed_flag(fit, "the folds")
     add_late_label_flags(fit)
     fit.add_argument("--out", required=True, metavar="MAP.json",
                      help="where to save the map (.json)")

@@ -23,7 +23,7 @@ __all__ = [
     "DataError", "MissingExtraError", "OPTIONAL_MODULES", "require", "shown", "clean",
     "TABLE_SUFFIXES", "table_kind", "one_line", "warn_line", "check_ranking", "check_row_count",
     "FEW_ROWS", "MIN_RESAMPLES", "add_positive_label_flag", "add_format_flag",
-    "add_resamples_flag", "whole_number",
+    "add_resamples_flag", "whole_number", "add_seed_flag", "MAX_SEED",
 ]
 
 
@@ -170,6 +170,32 @@ def whole_number(minimum: int, *, or_zero: bool = False):
         return value
 
     return parse
+
+
+#: the largest seed NumPy's and scikit-learn's random states take (seeds are 0 .. 2**32 - 1)
+MAX_SEED = 2**32 - 1
+
+
+def _seed(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"{plain(text)!r} is not a whole number; give a seed from 0 to {MAX_SEED} (2**32 - 1)"
+        ) from None
+    if not 0 <= value <= MAX_SEED:
+        raise argparse.ArgumentTypeError(
+            f"must be from 0 to {MAX_SEED} (2**32 - 1); got {value}"
+        )
+    return value
+
+
+def add_seed_flag(parser: argparse.ArgumentParser, what: str) -> None:
+    """The ``--seed`` flag: a whole number from 0 to :data:`MAX_SEED` (default 0)."""
+    parser.add_argument(
+        "--seed", type=_seed, default=0, metavar="S",
+        help=f"seed of {what}, from 0 to 2**32 - 1 (default 0)",
+    )
 
 
 def add_positive_label_flag(parser: argparse.ArgumentParser, what: str = "label") -> None:

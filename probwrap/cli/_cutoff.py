@@ -22,6 +22,7 @@ from ._common import (
     add_format_flag,
     add_positive_label_flag,
     add_resamples_flag,
+    add_seed_flag,
     check_ranking,
     check_row_count,
     shown,
@@ -368,7 +369,7 @@ def register(subparsers: Any) -> None:
         "--confidence", type=_level, default=0.95, metavar="LEVEL",
         help="coverage of the interval (default 0.95)",
     )
-    parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
+    add_seed_flag(parser, "the bootstrap and of the folds that choose a recalibration map")
     add_guarantee_flags(parser)
     add_late_label_flags(parser)
     add_format_flag(parser)

@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from ._common import DataError, require, whole_number
+from ._common import DataError, add_seed_flag, require, whole_number
 from ._files import check_writable, write_text
 from ._progress import Stages
 
@@ -35,9 +35,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--out", required=True, metavar="DIR", help="directory for report.html")
     parser.add_argument("--n-train", type=whole_number(500), default=4000, metavar="N",
                         help="summer parcels for training (default 4000, at least 500)")
-    parser.add_argument("--seed", type=int, default=0,
-                        help="random seed of the data, the folds and the bootstraps (default 0); "
-                        "the same seed gives the same numbers and report")
+    add_seed_flag(parser, "the data, the folds and the bootstraps (the same seed gives the "
+                  "same numbers and report)")
     parser.add_argument(
         "--variant", choices=("damage", "three-way"), default="damage",
         help="damage (default): inspect or ship; three-way: intact / dented / broken parcels "

@@ -37,6 +37,7 @@ from ._common import (
     add_format_flag,
     add_positive_label_flag,
     add_resamples_flag,
+    add_seed_flag,
     check_ranking,
     check_row_count,
     whole_number,
@@ -250,7 +251,7 @@ def register(subparsers: Any) -> None:
         "--confidence", type=_level, default=0.95, metavar="LEVEL",
         help="coverage of the interval (default 0.95)",
     )
-    parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
+    add_seed_flag(parser, "the bootstrap")
     batching = parser.add_mutually_exclusive_group()
     batching.add_argument(
         "--batch-size", type=whole_number(1), metavar="N",

@@ -17,6 +17,7 @@ from ._common import (
     add_format_flag,
     add_positive_label_flag,
     add_resamples_flag,
+    add_seed_flag,
     check_ranking,
     check_row_count,
     clean,
@@ -118,7 +119,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     add_alarm_flags(parser)
     add_guarantee_flags(parser)
     add_late_label_flags(parser)
-    parser.add_argument("--seed", type=int, default=0, help="bootstrap seed (default 0)")
+    add_seed_flag(parser, "the bootstraps and folds")
     parser.add_argument("--title", default="probwrap report", help="report title")
     parser.add_argument("--out", required=True, metavar="FILE",
                         help="HTML file to write (.html or .htm)")
