@@ -436,3 +436,22 @@ def test_seed_out_of_range_is_a_usage_error_on_every_verb(capsys, tmp_path, monk
 def test_largest_seed_is_accepted():
     args = build_parser().parse_args(["demo", "--out", "d", "--seed", str(2**32 - 1)])
     assert args.seed == 2**32 - 1
+
+
+# -- a reader that stops early -------------------------------------------------------------------
+@pytest.mark.parametrize("argv", [
+    ["prevalence", "--unlabelled", "week.csv", "--score-column", "risk",
+     "--source-prevalence", "0.3", "--batch-size", "50", "--resamples", "10",
+     "--format", "json"],
+    ["cutoff", "--help"],
+])
+def test_closed_output_pipe_ends_quietly(files, argv):
+    """``probwrap ... | head -1`` used to end in a BrokenPipeError traceback. The reading end is
+    closed before the command writes anything, so every write fails."""
+    proc = subprocess.Popen([sys.executable, "-m", "probwrap.cli", *argv], cwd=files,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    proc.stdout.close()
+    err = proc.stderr.read()
+    proc.stderr.close()
+    assert proc.wait(timeout=120) in (0, 1)
+    assert "Traceback" not in err and "BrokenPipe" not in err and "Exception ignored" not in err

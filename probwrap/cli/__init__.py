@@ -4,13 +4,16 @@ Verbs are registered by the modules of this package; each adds a sub-parser and 
 ``func(args) -> int``. Exit codes: 0 success, 2 usage error (argparse), 1 a problem that stops
 the command (bad data, a file that cannot be written, a missing optional dependency), reported
 in one line that names the file, column or row and the problem. 130 after Ctrl-C, 143 after
-SIGTERM; an interrupted command leaves every output file as it was before.
+SIGTERM; an interrupted command leaves every output file as it was before. 1, without a
+traceback, when the reader of the output stops early (``| head``).
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
 import importlib
+import os
 import signal
 import sys
 
@@ -54,7 +57,26 @@ def _on_sigterm(signum, frame):  # pragma: no cover - exercised in a subprocess 
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Run the command line; returns the exit code."""
+    """Run the command line; returns the exit code.
+
+    When the reader of standard output goes away early (``probwrap ... | head -1``), the rest
+    of the output is dropped quietly and the exit code is 1 (no traceback).
+    """
+    try:
+        try:
+            return _run(argv)
+        finally:  # inside the try: output still buffered is written, or fails, here
+            sys.stdout.flush()
+    except BrokenPipeError:
+        # as the Python documentation advises: point stdout at devnull so that the flush at
+        # interpreter exit does not fail once more
+        with contextlib.suppress(AttributeError, OSError, ValueError):
+            devnull = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(devnull, sys.stdout.fileno())
+        return 1
+
+
+def _run(argv: list[str] | None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     previous = None
