@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from probwrap.cli import build_parser, main
+from probwrap.cli import build_parser, join_negative_values, main
 from probwrap.cli._common import MIN_RESAMPLES
 from probwrap.cli._tables import numeric_column, read_table
 
@@ -455,3 +455,33 @@ def test_closed_output_pipe_ends_quietly(files, argv):
     proc.stderr.close()
     assert proc.wait(timeout=120) in (0, 1)
     assert "Traceback" not in err and "BrokenPipe" not in err and "Exception ignored" not in err
+
+
+# -- values that start with '-' ------------------------------------------------------------------
+def test_negative_cost_in_exponent_form_is_read_in_both_forms(files, capsys):
+    """``--cost-tn -1e-1`` used to stop with "expected one argument" (argparse takes only plain
+    numbers such as -5 for values); it now means the same as ``--cost-tn=-1e-1``."""
+    base = ["cutoff", "--scores", files / "held.csv", "--score-column", "risk",
+            "--label-column", "damaged", "--cost-fp", "3", "--cost-fn", "40",
+            "--resamples", "0", "--format", "json"]
+    code_a, out_a, err_a = run(capsys, *base, "--cost-tn", "-1e-1")
+    code_b, out_b, _ = run(capsys, *base, "--cost-tn=-1e-1")
+    code_c, out_c, _ = run(capsys, *base)
+    assert code_a == code_b == code_c == 0, err_a
+    assert out_a == out_b
+    a, c = json.loads(out_a), json.loads(out_c)
+    # a gain of 0.1 on every true negative: the cost of acting on no row drops by 0.1 times
+    # the share of negatives
+    share_negative = 1 - pd.read_csv(files / "held.csv")["damaged"].mean()
+    assert a["costs"]["tn"] == -0.1
+    assert a["cost_flag_none"] == pytest.approx(c["cost_flag_none"] - 0.1 * share_negative,
+                                                rel=1e-12)
+
+
+@pytest.mark.parametrize("form", [["--cost-matrix", "-5,4,12;30,4,12;60,60,12"],
+                                  ["--cost-matrix=-5,4,12;30,4,12;60,60,12"]])
+def test_cost_matrix_with_a_gain_first(form):
+    args = build_parser().parse_args(join_negative_values(
+        ["report", "--scores", "s.csv", "--class-columns", "a,b,c", "--label-column", "y",
+         *form, "--actions", "x,y,z", "--out", "r.html"]))
+    assert args.cost_matrix == "-5,4,12;30,4,12;60,60,12"

@@ -14,6 +14,7 @@ import argparse
 import contextlib
 import importlib
 import os
+import re
 import signal
 import sys
 
@@ -76,8 +77,47 @@ def main(argv: list[str] | None = None) -> int:
         return 1
 
 
+#: options that take a number or a cost matrix, whose value may start with '-' (a gain)
+_NUMBER_OPTIONS = frozenset({
+    "--cost-fp", "--cost-fn", "--cost-tp", "--cost-tn", "--cost-matrix", "--capacity",
+    "--confidence", "--seed", "--source-prevalence", "--horizon", "--alarm-reference",
+    "--alarm-decision-interval", "--guarantee-target", "--guarantee-confidence", "--resamples",
+    "--folds", "--batch-size", "--bins", "--n-train",
+})
+_NEGATIVE_VALUE = re.compile(r"-\.?\d")
+
+
+def join_negative_values(argv: list[str]) -> list[str]:
+    """``--cost-fp -1e-1`` as ``--cost-fp=-1e-1``: argparse takes a value that starts with '-'
+    for an option unless it is a plain number such as ``-5`` or ``-0.5``, so ``-1e-1`` or a cost
+    matrix ``"-5,4,12;30,4,12"`` stopped with "expected one argument".
+
+    Examples
+    --------
+    >>> join_negative_values(["cutoff", "--cost-fp", "-1e-1", "--cost-matrix", "-5,4;3,0"])
+    ['cutoff', '--cost-fp=-1e-1', '--cost-matrix=-5,4;3,0']
+    >>> join_negative_values(["--title", "-1 day", "--scores", "-data.csv"])
+    ['--title', '-1 day', '--scores', '-data.csv']
+    """
+    out: list[str] = []
+    i = 0
+    while i < len(argv):
+        token = argv[i]
+        if token == "--":  # the rest is not options
+            return out + argv[i:]
+        if (token in _NUMBER_OPTIONS and i + 1 < len(argv)
+                and _NEGATIVE_VALUE.match(argv[i + 1])):
+            out.append(f"{token}={argv[i + 1]}")
+            i += 2
+            continue
+        out.append(token)
+        i += 1
+    return out
+
+
 def _run(argv: list[str] | None) -> int:
     parser = build_parser()
+    argv = join_negative_values([str(a) for a in (sys.argv[1:] if argv is None else argv)])
     args = parser.parse_args(argv)
     previous = None
     try:
