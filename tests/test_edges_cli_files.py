@@ -197,3 +197,27 @@ def test_trailing_separator_on_every_row_keeps_the_columns(tmp_path, capsys, tab
     code_b, out_b, err_b = _cutoff(capsys, tmp_path / "trailing.csv")
     assert code_a == code_b == 0, err_b
     assert out_a.replace("plain.csv", "X") == out_b.replace("trailing.csv", "X")
+
+
+@pytest.mark.parametrize("style", ["whole numbers first", "scientific"])
+def test_semicolon_file_with_decimal_commas_found_past_the_first_rows(tmp_path, capsys, table,
+                                                                      style):
+    """A semicolon file was read with decimal commas only when one of its first five data lines
+    held a plain "d,d" number: a sorted file starting with exact 1s, or Excel's scientific
+    notation (4,757E-02), stopped with "'0,93' is not a finite number"."""
+    frame = table.copy()
+    if style == "whole numbers first":
+        frame.loc[:39, "risk"] = 1.0
+        frame = frame.sort_values("risk", ascending=False, kind="stable")
+        text = [f"{r:.17g}" for r in frame["risk"]]
+    else:
+        text = [f"{r:.6E}" for r in frame["risk"]]
+    frame["risk"] = [float(t) for t in text]  # what the file holds, read with a point
+    frame.to_csv(tmp_path / "plain.csv", index=False, float_format="%.17g")
+    lines = ["risk;outcome"] + [f"{t.replace('.', ',')};{o}"
+                                for t, o in zip(text, frame["outcome"], strict=True)]
+    (tmp_path / "eu.csv").write_text("\n".join(lines) + "\n")
+    code_a, out_a, err_a = _cutoff(capsys, tmp_path / "plain.csv")
+    code_b, out_b, err_b = _cutoff(capsys, tmp_path / "eu.csv")
+    assert code_a == code_b == 0, err_b
+    assert out_a.replace("plain.csv", "X") == out_b.replace("eu.csv", "X")

@@ -198,31 +198,44 @@ def _csv_header(path: Path, encoding: str, sep: str) -> list[str] | None:
     return None
 
 
-_DECIMAL_COMMA = re.compile(r"(^|;)\s*-?\d+,\d+\s*(;|$)")
+#: a field that is a number written with a decimal comma: 0,42 or -1,25 or Excel's 4,757E-02
+#: (optionally in double quotes), between semicolons or at the start or end of a line
+_DECIMAL_COMMA = re.compile(
+    r'(?:^|;)[ \t]*"?[ \t]*[-+]?\d+,\d+(?:[eE][-+]?\d+)?[ \t]*"?[ \t]*(?=;|\r?$)',
+    re.MULTILINE,
+)
+#: characters read at a time when looking for decimal commas
+_SCAN_CHUNK = 1 << 20
 
 
 def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
-    """Separator and decimal mark of a CSV file, from its first lines.
+    """Separator and decimal mark of a CSV file.
 
     Comma-separated unless the header has no comma but a semicolon or a tab (spreadsheets in
     many European locales write ``;`` with decimal commas). With ``;`` the decimal mark is a
-    comma when a field of the first data lines is a number written with one.
+    comma when any field of the file is a number written with one (``0,42``, ``4,757E-02``):
+    the whole file is looked at, since a sorted file may start with many rows of whole numbers.
     """
     try:
         with open(path, encoding=encoding, errors="replace") as handle:
-            lines = [handle.readline() for _ in range(6)]
+            header = handle.readline()
+            while header and not header.strip():
+                header = handle.readline()
+            if "," in header:
+                return ",", "."
+            if "\t" in header:
+                return "\t", "."
+            if ";" not in header:
+                return ",", "."
+            while True:
+                chunk = handle.read(_SCAN_CHUNK)
+                if not chunk:
+                    return ";", "."
+                chunk += handle.readline()  # end the chunk at the end of a line
+                if _DECIMAL_COMMA.search(chunk):
+                    return ";", ","
     except OSError:
         return ",", "."
-    header = lines[0]
-    if "," in header:
-        return ",", "."
-    if "\t" in header:
-        return "\t", "."
-    if ";" in header:
-        data = [line.strip() for line in lines[1:] if line.strip()]
-        decimal = "," if any(_DECIMAL_COMMA.search(line) for line in data) else "."
-        return ";", decimal
-    return ",", "."
 
 
 def _columns_listed(frame: Any) -> str:
