@@ -392,3 +392,40 @@ def test_cutoff_text_explains_a_negative_cutoff(tmp_path, capsys):
     # a cutoff inside (0, 1): no such line
     code, out, err = run(capsys, *args[:-4], "--cost-fn", 1, "--resamples", 0)
     assert code == 0 and "below 0" not in out
+
+
+def test_calibrate_auto_lists_every_candidate_and_the_sample(tmp_path, capsys):
+    """On more than 20,000 rows the candidates are scored on a sample and the clearly worse ones
+    are left out after the first fold; fit used to print the winner alone, and the map file to
+    keep only its loss. Data: logistic-regression probabilities of "digit 8" on scikit-learn's
+    bundled digits set, rows drawn with replacement."""
+    from sklearn.datasets import load_digits
+    from sklearn.model_selection import cross_val_predict
+
+    from probwrap.cli._calibrate import fit_map
+
+    X, digit = load_digits(return_X_y=True)
+    y = (digit == 8).astype(int)
+    p = cross_val_predict(LogisticRegression(C=0.01, max_iter=2000), X, y, cv=5,
+                          method="predict_proba")[:, 1]
+    rows = np.random.default_rng(0).integers(0, y.shape[0], 30_000)
+    pd.DataFrame({"risk": p[rows], "y": y[rows]}).to_csv(tmp_path / "big.csv", index=False)
+    code, out, err = run(capsys, "calibrate", "fit", "--scores", tmp_path / "big.csv",
+                         "--score-column", "risk", "--label-column", "y",
+                         "--out", tmp_path / "map.json")
+    assert code == 0, err
+    wrapper = fit_map(proba_to_log_odds(p[rows]), y[rows], method="auto", folds=5, seed=0)
+    assert "sample of 20000 of 30000 rows" in wrapper.method_notes_["auto"]
+    left_out = set(wrapper.method_notes_) - set(wrapper.method_scores_) - {"auto"}
+    assert left_out  # the case this test is about: some candidates have no loss
+    lines = out.splitlines()
+    for name in set(wrapper.method_scores_) | left_out:
+        line = next(line for line in lines if line.split()[:1] == [name])
+        if name in left_out:
+            assert "no loss: " + wrapper.method_notes_[name] in line
+        else:
+            assert f"{wrapper.method_scores_[name][0]:.5f}" in line
+    assert f"  note: {wrapper.method_notes_['auto']}" in lines
+    saved = json.loads((tmp_path / "map.json").read_text())["metadata"]
+    assert saved["auto_notes"] == wrapper.method_notes_
+    assert set(saved["auto_log_loss"]) == set(wrapper.method_scores_)

@@ -164,6 +164,11 @@ def _fit(args: argparse.Namespace) -> int:
                 name: {"log_loss": loss, "standard_error": se}
                 for name, (loss, se) in wrapper.method_scores_.items()
             }
+            # why each other candidate has no loss, and whether a sample of rows scored them
+            metadata["auto_notes"] = {
+                name: clean(" ".join(str(note).split()))
+                for name, note in wrapper.method_notes_.items()
+            }
         description = map_to_dict(wrapper.calibrator_, **metadata)
         stages.start("writing")
         write_text(args.out, json.dumps(description, indent=2, allow_nan=False) + "\n")
@@ -173,7 +178,18 @@ def _fit(args: argparse.Namespace) -> int:
     )
     if late is not None:
         print("  " + late_label_line(late))
-    if args.method == "auto" and wrapper.method_scores_:
+    if args.method == "auto":
+        _print_candidates(wrapper)
+    return 0
+
+
+def _print_candidates(wrapper: Any) -> None:
+    """Every candidate of ``--method auto``: its cross-validated log loss, or why it has none
+    (left out after a fold, not eligible, failed), and whether a sample of the rows scored
+    them."""
+    notes = {name: clean(" ".join(str(note).split()))
+             for name, note in wrapper.method_notes_.items()}
+    if wrapper.method_scores_:
         # the standard error is that of each candidate's difference from the best one (so the
         # best one has none): printing it as "+-" read as the uncertainty of the loss itself
         print("  candidate   cross-validated log loss   (standard error of the difference "
@@ -182,7 +198,16 @@ def _fit(args: argparse.Namespace) -> int:
             mark = "  <- chosen" if name == wrapper.method_ else ""
             gap = "lowest" if se == 0.0 else f"{se:.5f}"
             print(f"  {name:<11} {loss:.5f}   ({gap}){mark}")
-    return 0
+    for name, note in notes.items():
+        if name == "auto":
+            continue
+        if name in wrapper.method_scores_:  # scored, then set aside (e.g. a boundary)
+            print(f"  {name:<11} {note}")
+        else:
+            mark = "  <- chosen" if name == wrapper.method_ else ""
+            print(f"  {name:<11} no loss: {note}{mark}")
+    if "auto" in notes:
+        print(f"  note: {notes['auto']}")
 
 
 def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str, Any], str]:
