@@ -429,3 +429,56 @@ def test_calibrate_auto_lists_every_candidate_and_the_sample(tmp_path, capsys):
     saved = json.loads((tmp_path / "map.json").read_text())["metadata"]
     assert saved["auto_notes"] == wrapper.method_notes_
     assert set(saved["auto_log_loss"]) == set(wrapper.method_scores_)
+
+
+def test_cutoff_capacity_with_ties_at_the_top(tmp_path, capsys):
+    """A fifth of the rows score exactly 1.0 and the capacity is 0.1: no cutoff acts on part of
+    a tie, so no row is acted on. The verb printed the cutoff 1.00312 (above every probability)
+    and said nothing about why nothing was flagged."""
+    rng = np.random.default_rng(0)
+    q = np.r_[np.ones(40), rng.uniform(0, 0.9, 160)]
+    y = (rng.random(200) < q).astype(int)
+    pd.DataFrame({"risk": q, "y": y}).to_csv(tmp_path / "ties.csv", index=False)
+    argv = ["cutoff", "--scores", tmp_path / "ties.csv", "--score-column", "risk",
+            "--label-column", "y", "--cost-fp", "3", "--cost-fn", "40", "--capacity", "0.1",
+            "--resamples", "20"]
+    code, out, err = run(capsys, *argv, "--format", "json")
+    assert code == 0, err
+    summary = json.loads(out)
+    assert summary["cutoff"] == 1.0 and summary["flagged_share"] == 0.0
+    assert summary["cutoff_range"] == [1.0, 1.0]
+    assert max(summary["cutoff_interval"]) <= 1.0
+    assert summary["settled_cutoff"]["cutoff"] <= 1.0
+    assert summary["capacity_ties"] == {"score": 1.0, "rows": 40, "share": 0.2,
+                                        "flagged_share_with_them": 0.2}
+    assert ("probwrap cutoff: warning: the 40 rows with the top score 1 are 0.2 of the rows, "
+            "more than the capacity 0.1") in err
+    assert "no row is acted on" in err
+    code, out, err = run(capsys, *argv)
+    assert code == 0, err
+    assert "  cutoff                1   (act when score > cutoff)" in out
+    assert "  same cost for         [1, 1]" in out
+    assert "no row is acted on" in err
+    # a capacity that holds the tie: no warning, the tied rows are acted on
+    code, out, err = run(capsys, *argv, "--capacity", "0.2", "--format", "json")
+    assert code == 0, err
+    assert json.loads(out)["capacity_ties"] is None and "tie" not in err
+    assert json.loads(out)["flagged_share"] >= 0.2
+
+
+def test_cutoff_capacity_with_ties_below_the_cutoff(tmp_path, capsys):
+    """A tie just below the cutoff that the capacity leaves out is named, with the share acted
+    on (5 distinct top rows, then 10 rows tied at 0.8, capacity 0.1 of 100 rows)."""
+    q = np.r_[[0.99, 0.98, 0.97, 0.96, 0.95], np.full(10, 0.8), np.linspace(0.01, 0.5, 85)]
+    y = np.r_[np.ones(15, dtype=int), (np.arange(85) % 3 == 0).astype(int)]
+    pd.DataFrame({"risk": q, "y": y}).to_csv(tmp_path / "ties.csv", index=False)
+    code, out, err = run(capsys, "cutoff", "--scores", tmp_path / "ties.csv", "--score-column",
+                         "risk", "--label-column", "y", "--cost-fp", "3", "--cost-fn", "40",
+                         "--capacity", "0.1", "--resamples", "0", "--format", "json")
+    assert code == 0, err
+    summary = json.loads(out)
+    assert summary["flagged_share"] == 0.05
+    assert summary["capacity_ties"] == {"score": 0.8, "rows": 10, "share": 0.1,
+                                        "flagged_share_with_them": pytest.approx(0.15)}
+    assert "10 rows tie at the score 0.8 just below the cutoff (0.1 of the rows)" in err
+    assert "stays at 0.05" in err

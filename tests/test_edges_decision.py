@@ -172,3 +172,18 @@ def test_realised_cost_of_huge_costs_and_weights_is_the_exact_weighted_mean():
     # since the scaling inside is by powers of two)
     assert realised_cost(y, a, costs=matrix, classes=[0, 1], sample_weight=w / 1e307 * 2.0**-20) \
         == pytest.approx(got, rel=n * np.finfo(float).eps)
+
+
+def test_capacity_cutoff_with_ties_at_the_top_score_stays_within_the_bounds():
+    """Worked by hand. Scores 0.1, 0.4, 1.0, 1.0 with capacity 0.25: acting on the rows above
+    0.4 acts on the two rows at 1.0, 2/4 = 0.5 of the rows, over 0.25; no cutoff splits the tie,
+    so no row can be acted on. Every cutoff c with c >= 1.0 does that ("act when score > c"),
+    and within the bounds (0, 1) the only one is 1.0. The cutoff used to be the middle of
+    [1.0, 1.0 + gap) with gap = (1.0 - 0.1) / 2 = 0.45 (the mean spacing of the 3 distinct
+    scores): 1.225, outside the range of probabilities."""
+    assert capacity_cutoff([0.1, 0.4, 1.0, 1.0], 0.25, score_bounds=(0, 1)) == 1.0
+    # below the top score the bounds change nothing: the rows above 0.4 are 0.5 of the rows,
+    # so with capacity 0.5 the cutoff is the middle of [0.4, 1.0), 0.7
+    assert capacity_cutoff([0.1, 0.4, 1.0, 1.0], 0.5, score_bounds=(0, 1)) == pytest.approx(0.7)
+    # without bounds the range [1.0, 1.45) has its middle 1.225
+    assert capacity_cutoff([0.1, 0.4, 1.0, 1.0], 0.25) == pytest.approx(1.225)

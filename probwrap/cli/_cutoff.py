@@ -149,15 +149,24 @@ def cutoff_summary(
         )
     flagged = mean(scores > res.cutoff)
     realised = matrix[y, 1]
+    # Cutoffs are "act when score > c". Above the top score every cutoff acts on no row; for
+    # probabilities the search may place such a cutoff past 1 (when a row scores exactly 1),
+    # where 1 acts on the same rows (none): probability cutoffs are kept in [0, 1] that way.
+    # (Below 0 is kept: only a cutoff below 0 acts on rows scored exactly 0.)
+    top = 1.0 if scale == "proba" else np.inf
+
+    def within(c: float) -> float:
+        return float(min(c, top))
+
     out: dict[str, Any] = {
         "n_rows": int(scores.shape[0]),
         "n_positive": int(y.sum()),
         "score_scale": scale,
         "costs": {key: float(costs.get(key, 0.0)) for key in ("tp", "fp", "fn", "tn")},
         "capacity": capacity,
-        "cutoff": float(res.cutoff),
-        "cutoff_range": [float(res.interval[0]), float(res.interval[1])],
-        "cutoff_interval": None if ci is None else [float(ci.low), float(ci.high)],
+        "cutoff": within(res.cutoff),
+        "cutoff_range": [within(res.interval[0]), within(res.interval[1])],
+        "cutoff_interval": None if ci is None else [within(ci.low), within(ci.high)],
         "confidence_level": float(confidence_level),
         "n_resamples": int(n_resamples),
         "expected_cost": float(res.cost) * unit,
@@ -165,7 +174,11 @@ def cutoff_summary(
         "cost_flag_none": mean_cost(matrix[y, 0]),
         # acting on every row breaks any capacity below 1
         "cost_flag_all": mean_cost(realised) if capacity in (None, 1.0) else None,
+        "capacity_ties": None,
     }
+    if capacity is not None:
+        out["capacity_ties"] = _capacity_ties(scores, y, matrix, w, res.cutoff, capacity,
+                                              bounds, sample_weight)
     if scale == "proba":
         try:
             bayes = plugin_cutoff(original)
@@ -194,7 +207,7 @@ def cutoff_summary(
             settled = settle_cutoff(scores, y, matrix, res, sample_weight=sample_weight,
                                     anchor=anchor)
             out["settled_cutoff"] = {
-                "cutoff": settled.cutoff,
+                "cutoff": within(settled.cutoff),
                 "expected_cost": mean_cost(
                     matrix[y, (scores > settled.cutoff).astype(np.intp)]),
                 "is_bayes_cutoff": bool(settled.cutoff == bayes),
@@ -212,7 +225,7 @@ def cutoff_summary(
             "target": g.target,
             "method": g.method,
             "confidence": g.confidence,
-            "cutoff": g.cutoff,
+            "cutoff": within(g.cutoff),
             "expected_cost": g.cost * unit,
             "flagged_share": mean(scores > g.cutoff),
             "achieved": g.achieved,
@@ -221,6 +234,49 @@ def cutoff_summary(
             "moved_the_cutoff": g.binding,
         }
     return out
+
+
+def _capacity_ties(
+    scores: np.ndarray, y: np.ndarray, matrix: np.ndarray, w: np.ndarray, cutoff: float,
+    capacity: float, bounds: tuple[float, float] | None, sample_weight: np.ndarray | None,
+) -> dict[str, Any] | None:
+    """The rows tied at the score just below the cutoff, when the capacity alone keeps them
+    from being acted on (a cutoff acts on all tied rows or on none), with a warning; else None.
+    """
+    from probwrap.decision import search_cutoff
+
+    below = scores <= cutoff
+    if not below.any():
+        return None
+    score = float(scores[below].max())
+    tied = scores == score
+    count = int(np.count_nonzero(tied))
+    total = float(w.sum())
+    flagged = float(w[scores > cutoff].sum()) / total
+    share = float(w[tied].sum()) / total
+    if count < 2 or flagged + share <= capacity * (1 + 1e-12):
+        return None
+    free = search_cutoff(scores, y, matrix, score_bounds=bounds, sample_weight=sample_weight)
+    if not free.cutoff < score:  # the costs alone leave them out: the capacity does not bind
+        return None
+    if flagged == 0.0:
+        warnings.warn(
+            f"the {count} rows with the top score {score:.6g} are {share:.4g} of the rows, more "
+            f"than the capacity {capacity:g}: a cutoff acts on all tied rows or on none, and "
+            f"acting on them all would break the capacity, so no row is acted on; scores with "
+            f"fewer ties (more digits), or --capacity {share:.4g} or more, let them be acted on",
+            UserWarning, stacklevel=3,
+        )
+    else:
+        warnings.warn(
+            f"{count} rows tie at the score {score:.6g} just below the cutoff ({share:.4g} of "
+            f"the rows): acting on them too would act on {flagged + share:.4g} of the rows, "
+            f"more than the capacity {capacity:g}, and a cutoff acts on all tied rows or on "
+            f"none, so none of them is acted on and the share acted on stays at {flagged:.4g}",
+            UserWarning, stacklevel=3,
+        )
+    return {"score": score, "rows": count, "share": share,
+            "flagged_share_with_them": flagged + share}
 
 
 def _text(out: dict[str, Any], path: str) -> str:
@@ -232,7 +288,9 @@ def _text(out: dict[str, Any], path: str) -> str:
         f"  costs                 {costs}"
         + (f"; capacity {out['capacity']:g} of rows" if out["capacity"] is not None else ""),
         f"  cutoff                {out['cutoff']:.6g}   (act when score > cutoff)",
-        f"  same cost for         [{out['cutoff_range'][0]:.6g}, {out['cutoff_range'][1]:.6g})",
+        f"  same cost for         [{out['cutoff_range'][0]:.6g}, {out['cutoff_range'][1]:.6g}"
+        # a range that reaches 1 for probabilities includes 1 (no row scores above it)
+        + ("]" if out["score_scale"] == "proba" and out["cutoff_range"][1] >= 1.0 else ")"),
         f"  {level}% interval          [{out['cutoff_interval'][0]:.6g}, "
         f"{out['cutoff_interval'][1]:.6g}]   (bootstrap, {out['n_resamples']} resamples)"
         if out["cutoff_interval"] is not None else "  interval              not computed (--resamples 0)",

@@ -646,7 +646,10 @@ def capacity_cutoff(
     """Lowest cutoff that gives the positive action to at most ``capacity`` of the rows.
 
     The cutoff lies in the middle of the range of cutoffs that flag the same rows (rows with tied
-    scores are flagged together, so the flagged share may stay below ``capacity``).
+    scores are flagged together, so the flagged share may stay below ``capacity``). With
+    ``score_bounds`` the cutoff stays within them wherever a cutoff within them flags the same
+    rows: when the rows at the top score ``high`` alone exceed ``capacity``, no row is flagged
+    and the cutoff is ``high`` itself (act when score > cutoff).
 
     Examples
     --------
@@ -666,4 +669,10 @@ def capacity_cutoff(
         np.zeros(s.shape[0]), 0.0, None if w is None else w[rows.order]
     )
     j = int(np.argmax(flagged / weight <= cap * (1 + 1e-12)))
-    return float(rows.mid[j])
+    cut = float(rows.mid[j])
+    bounds = _check_bounds(score_bounds)
+    if bounds is not None and cut > bounds[1] and rows.lower[j] <= bounds[1]:
+        # the decision's range [lower, upper) reaches past the bounds (the top score equals the
+        # upper bound, so every row scores at most it): its middle within them
+        cut = float(_middle(rows.lower[j], bounds[1]))
+    return cut
