@@ -226,7 +226,8 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
     if path.is_dir():
         raise DataError(f"{path}: is a folder, not a map file")
     try:
-        description = json.loads(path.read_text(encoding="utf-8"))
+        # a byte-order mark (editors on Windows add one) is skipped, as in CSV files
+        description = json.loads(path.read_text(encoding="utf-8-sig"))
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise DataError(f"{path}: not a JSON file ({exc})") from None
     except RecursionError:

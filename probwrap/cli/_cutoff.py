@@ -349,6 +349,7 @@ def _text(out: dict[str, Any], path: str) -> str:
 
 def _run(args: argparse.Namespace) -> int:
     late_columns = late_label_columns(args, args._parser)
+    guarantee = guarantee_args(args, args._parser)
     late = weights = None
     with Stages("cutoff", ["reading", "searching the cutoff and its interval"]) as stages:
         stages.start("reading")
@@ -374,7 +375,7 @@ def _run(args: argparse.Namespace) -> int:
                 out = cutoff_summary(
                     scores, y, costs, scale=args.scale, capacity=args.capacity,
                     n_resamples=args.resamples, confidence_level=args.confidence,
-                    seed=args.seed, guarantee=guarantee_args(args),
+                    seed=args.seed, guarantee=guarantee,
                     sample_weight=weights,
                 )
             except ValueError as exc:

@@ -20,6 +20,12 @@ def check_out_suffix(
     parser: argparse.ArgumentParser, out: str, suffixes: tuple[str, ...], flag: str = "--out"
 ) -> None:
     """A usage error (exit 2) unless ``out`` ends with one of ``suffixes``."""
+    if Path(out).name.lower() in suffixes:
+        # ".json" is a name with no extension (a hidden file) to Python and to the user's shell
+        parser.error(
+            f"{flag} {out}: the file name is only the extension; give a name before it, such "
+            f"as {'out' + Path(out).name.lower()}"
+        )
     if Path(out).suffix.lower() not in suffixes:
         parser.error(
             f"{flag} {out}: unsupported file type {Path(out).suffix or '(none)'!s}; use one of "
@@ -44,6 +50,8 @@ def check_writable(path: str | Path, *, folder: bool = False) -> None:
     ``folder=True``: ``path`` is a folder to write into (created when missing).
     """
     path = Path(path)
+    if path.is_symlink():  # written through (see write_atomic): check the linked file's folder
+        path = Path(os.path.realpath(path))
     if folder:
         if path.exists() and not path.is_dir():
             raise DataError(f"{path}: is a file; --out names a folder")
@@ -69,9 +77,14 @@ def write_atomic(path: str | Path, write: Callable[[Path], None]) -> None:
     and fsynced, then moved over ``path`` with :func:`os.replace` (atomic on POSIX and
     Windows). An error or an interruption (Ctrl-C, SIGTERM, a full disk) removes the
     temporary file and leaves any previous ``path`` as it was; of two runs writing the same
-    path, the last to finish wins with its whole file. Missing parent folders are created.
+    path, the last to finish wins with its whole file. Missing parent folders are created. A
+    symbolic link is written through: the file it points to is replaced, the link is kept.
     """
     path = Path(path)
+    if path.is_symlink():
+        # write through the link to the file it points to; replacing the link itself with a
+        # plain file would leave the linked file stale without a word
+        path = Path(os.path.realpath(path))
     _prepare_folder(path)
     try:
         fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)

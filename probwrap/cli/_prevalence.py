@@ -49,7 +49,7 @@ from ._prevalence_numbers import (
     prevalence_from_source,
 )
 from ._progress import Stages
-from ._promise_flags import add_alarm_flags
+from ._promise_flags import add_alarm_flags, alarm_settings
 from ._tables import read_labels, read_table
 
 __all__ = ["register", "prevalence_from_source", "prevalence_from_reference", "batch_alarm_json"]
@@ -276,6 +276,9 @@ def register(subparsers: Any) -> None:
                 )
         elif args.label_column is None:
             parser.error("--reference needs --label-column")
+        alarm_settings(args, parser,
+                       batched=args.batch_size is not None or args.batch_column is not None,
+                       batches="--batch-size or --batch-column")
         if (args.batch_size is not None or args.batch_column is not None) and not args.resamples:
             parser.error("--batch-size and --batch-column need --resamples > 0 (the alarm reads "
                          "each batch's standard error from its interval)")

@@ -47,7 +47,8 @@ def add_late_label_flags(parser: argparse.ArgumentParser) -> None:
                        help="how long each row has been observed (until its event, or until "
                        "now), in the unit of --horizon")
     group.add_argument("--event-column", metavar="E",
-                       help="1 when the row's event happened at that time, 0 when not yet")
+                       help="1 (or True) when the row's event happened at that time, 0 (or "
+                       "False) when not yet")
     group.add_argument("--horizon", type=_positive, metavar="H",
                        help="the outcome is 'the event happened within H'")
 
@@ -81,17 +82,44 @@ def read_late_labels(frame: Any, args: argparse.Namespace, path: str) -> Any:
     from probwrap.late_labels import labels_at_horizon
 
     time = numeric_column(frame, args.time_column, path, flag="--time-column")
-    event = numeric_column(frame, args.event_column, path, flag="--event-column")
+    event = numeric_column(_true_false_as_numbers(frame, args.event_column), args.event_column,
+                           path, flag="--event-column")
     bad = ~np.isin(event, (0.0, 1.0))
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
         raise DataError(f"{path}: column {shown(args.event_column)}, row {row + 2} (counting "
                         f"the header as row 1) holds {shown(event[row])}; events are 1 "
-                        "(happened) or 0 (not yet)")
+                        "(happened) or 0 (not yet), or True / False")
     try:
         return labels_at_horizon(time, event.astype(int), args.horizon)
     except ValueError as exc:
         raise DataError(f"{path}: late labels: {clean(str(exc))}") from None
+
+
+_TRUE_FALSE = {"true": "1", "false": "0"}
+
+
+def _true_false_as_numbers(frame: Any, column: str) -> Any:
+    """``frame`` with the words True / False (any case) or booleans of ``column`` as 1 / 0, as
+    label columns take them; other values are left for :func:`numeric_column` to judge."""
+    import pandas as pd
+
+    if column not in frame.columns:
+        return frame
+    series = frame[column]
+    if pd.api.types.is_bool_dtype(series.dtype):
+        return pd.DataFrame({column: series.astype(float)}, index=frame.index)
+    if series.dtype != object and not pd.api.types.is_string_dtype(series.dtype):
+        return frame
+
+    def number(value: Any) -> Any:
+        if isinstance(value, bool | np.bool_):
+            return "1" if value else "0"
+        if isinstance(value, str):
+            return _TRUE_FALSE.get(value.strip().lower(), value)
+        return value
+
+    return pd.DataFrame({column: series.map(number)}, index=frame.index)
 
 
 def late_label_summary(hl: Any) -> dict[str, Any]:
@@ -109,7 +137,7 @@ def late_label_line(hl: Any) -> str:
             "probability of still being observed")
 
 
-__all__ += ["late_label_line", "add_alarm_flags", "promise_summary"]
+__all__ += ["late_label_line", "add_alarm_flags", "alarm_settings", "promise_summary"]
 
 
 # -- prevalence alarm -----------------------------------------------------------------------
@@ -130,18 +158,39 @@ def _positive(text: str) -> float:
     return value
 
 
+#: the alarm's settings when the flags are not given
+ALARM_DEFAULTS = {"alarm_reference": 0.5, "alarm_decision_interval": 5.0}
+
+
 def add_alarm_flags(parser: argparse.ArgumentParser) -> None:
-    """``--alarm-reference`` and ``--alarm-decision-interval`` of the prevalence alarm."""
+    """``--alarm-reference`` and ``--alarm-decision-interval`` of the prevalence alarm (None
+    when not given: :func:`alarm_settings` checks them and puts in the defaults)."""
     parser.add_argument(
-        "--alarm-reference", type=_nonnegative, default=0.5, metavar="K",
+        "--alarm-reference", type=_nonnegative, default=None, metavar="K",
         help="reference value k of the alarm, in standard errors: half the shift it should "
         "catch fastest (default 0.5)",
     )
     parser.add_argument(
-        "--alarm-decision-interval", type=_positive, default=5.0, metavar="H",
+        "--alarm-decision-interval", type=_positive, default=None, metavar="H",
         help="decision interval h of the alarm, in standard errors: larger means fewer false "
         "alarms and slower detection (default 5: about one false alarm in 465 batches)",
     )
+
+
+def alarm_settings(args: argparse.Namespace, parser: argparse.ArgumentParser, *,
+                   batched: bool, batches: str) -> None:
+    """A usage error for alarm flags given without batches (the alarm would not run, and the
+    flags would be ignored); then the defaults in place of flags not given."""
+    if not batched:
+        given = [f"--{name.replace('_', '-')}" for name in ALARM_DEFAULTS
+                 if getattr(args, name) is not None]
+        if given:
+            verb = "sets" if len(given) == 1 else "set"
+            parser.error(f"{' and '.join(given)} {verb} the prevalence alarm, which runs only "
+                         f"on batches: add {batches}, or leave {' and '.join(given)} out")
+    for name, default in ALARM_DEFAULTS.items():
+        if getattr(args, name) is None:
+            setattr(args, name, default)
 
 
 # -- guarantee -------------------------------------------------------------------------------
@@ -169,16 +218,16 @@ def add_guarantee_flags(parser: argparse.ArgumentParser) -> None:
     )
 
 
-def guarantee_args(args: argparse.Namespace) -> dict[str, Any] | None:
-    """The ``guarantee`` keyword arguments, or None; errors for a half-given guarantee."""
+def guarantee_args(args: argparse.Namespace,
+                   parser: argparse.ArgumentParser) -> dict[str, Any] | None:
+    """The ``guarantee`` keyword arguments, or None; usage errors (exit 2) for a half-given
+    guarantee."""
     if args.guarantee is None:
         if args.guarantee_target is not None:
-            raise DataError("--guarantee-target needs --guarantee (which metric).")
+            parser.error("--guarantee-target needs --guarantee (which metric)")
         return None
     if args.guarantee_target is None:
-        raise DataError(
-            f"--guarantee {args.guarantee} needs --guarantee-target (e.g. 0.9)."
-        )
+        parser.error(f"--guarantee {args.guarantee} needs --guarantee-target (e.g. 0.9)")
     return {"requirement": args.guarantee, "target": args.guarantee_target,
             "confidence": args.guarantee_confidence, "method": args.guarantee_method}
 

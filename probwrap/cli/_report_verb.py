@@ -32,6 +32,7 @@ from ._promise_flags import (
     add_alarm_flags,
     add_guarantee_flags,
     add_late_label_flags,
+    alarm_settings,
     guarantee_args,
     late_label_columns,
     promise_summary,
@@ -160,6 +161,9 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         parser.error("with --class-columns give costs as --cost-matrix, not --cost-fp/--cost-fn")
     if args.batch_size is not None:
         parser.error("--batch-size is available for binary score files only")
+    if args.unlabelled_score_column is not None:
+        parser.error("--unlabelled-score-column is for binary score files (--score-column); "
+                     "with --class-columns the unlabelled file holds the same class columns")
     if args.guarantee is not None or args.guarantee_target is not None:
         parser.error("--guarantee is available for binary score files only (one cutoff)")
     if any(v is not None for v in (args.time_column, args.event_column, args.horizon)):
@@ -357,6 +361,11 @@ def _handler(args: argparse.Namespace) -> int:
         parser.error(f"--resamples must be at least {MIN_RESAMPLES}")
     if (args.score_column is None) == (args.class_columns is None):
         parser.error("give either --score-column (binary) or --class-columns (one per class)")
+    if args.unlabelled_score_column is not None and args.unlabelled is None:
+        parser.error("--unlabelled-score-column needs --unlabelled (the file it names a "
+                     "column of)")
+    alarm_settings(args, parser, batched=args.batch_size is not None,
+                   batches="--batch-size (with --unlabelled)")
     if args.class_columns is not None:
         return _class_handler(args, parser)
     if args.cost_matrix is not None or args.actions is not None or args.capacity_action:
@@ -372,7 +381,7 @@ def _handler(args: argparse.Namespace) -> int:
         parser.error("--batch-size needs --unlabelled")
     if args.guarantee is not None and not given:
         parser.error("--guarantee needs costs (--cost-fp and --cost-fn)")
-    guarantee = guarantee_args(args)
+    guarantee = guarantee_args(args, parser)
     late_columns = late_label_columns(args, parser)
 
     check_writable(args.out)
