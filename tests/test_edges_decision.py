@@ -187,3 +187,20 @@ def test_capacity_cutoff_with_ties_at_the_top_score_stays_within_the_bounds():
     assert capacity_cutoff([0.1, 0.4, 1.0, 1.0], 0.5, score_bounds=(0, 1)) == pytest.approx(0.7)
     # without bounds the range [1.0, 1.45) has its middle 1.225
     assert capacity_cutoff([0.1, 0.4, 1.0, 1.0], 0.25) == pytest.approx(1.225)
+
+
+def test_cutoff_search_with_ties_at_one_acts_on_none_at_the_cutoff_one():
+    """Probabilities with a fifth of the rows at exactly 1.0 and a capacity of 0.1: no decision
+    that flags the tied rows is allowed, so the rule acts on none, and for probabilities that
+    is the cutoff 1 (p > 1 never holds), not the middle of a range beyond 1. By hand: scores
+    0.1, 0.2, ..., 0.8 and two at 1.0 (10 rows), costs fp 1, fn 4; the admissible decisions are
+    'act on none' only (flagging the two 1.0 rows is a share of 0.2 > 0.1)."""
+    p = np.r_[np.arange(1, 9) / 10, 1.0, 1.0]
+    y = np.array([0, 0, 0, 1, 0, 1, 0, 1, 1, 1])
+    res = search_cutoff(p, y, {"fp": 1, "fn": 4}, capacity=0.1, score_bounds=(0.0, 1.0))
+    assert res.cutoff == 1.0
+    assert res.interval == (1.0, 1.0)
+    assert res.cost == pytest.approx(4 * 5 / 10)  # five positives missed at 4 each, per row
+    assert np.all(res.cutoffs <= 1.0)
+    # without bounds the last range reaches beyond the top score, as for unbounded scores
+    assert search_cutoff(p, y, {"fp": 1, "fn": 4}, capacity=0.1).cutoff > 1.0

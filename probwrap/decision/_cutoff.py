@@ -357,7 +357,9 @@ def _search_plain_rows(
     if bounds is not None:
         if bounds[0] < u[0]:
             lo_ext = bounds[0]
-        if bounds[1] > u[-1]:
+        if bounds[1] >= u[-1]:
+            # top scores at the bound itself (probabilities of exactly 1): "act on none" is the
+            # cutoff at the bound, not one beyond it
             hi_ext = bounds[1]
 
     def shares_at(j: Any) -> np.ndarray:
@@ -669,10 +671,4 @@ def capacity_cutoff(
         np.zeros(s.shape[0]), 0.0, None if w is None else w[rows.order]
     )
     j = int(np.argmax(flagged / weight <= cap * (1 + 1e-12)))
-    cut = float(rows.mid[j])
-    bounds = _check_bounds(score_bounds)
-    if bounds is not None and cut > bounds[1] and rows.lower[j] <= bounds[1]:
-        # the decision's range [lower, upper) reaches past the bounds (the top score equals the
-        # upper bound, so every row scores at most it): its middle within them
-        cut = float(_middle(rows.lower[j], bounds[1]))
-    return cut
+    return float(rows.mid[j])

@@ -54,7 +54,9 @@ class _SortedRows:
         if score_bounds is not None:
             if score_bounds[0] < u[0]:
                 lo_ext = score_bounds[0]
-            if score_bounds[1] > u[-1]:
+            if score_bounds[1] >= u[-1]:
+                # top scores at the bound itself (probabilities of exactly 1): "act on none"
+                # is the cutoff at the bound, not one beyond it
                 hi_ext = score_bounds[1]
         # Decision j (j = 0..m) is "positive action for rows scoring above lower[j]"; any cutoff
         # in [lower[j], upper[j]) produces it.
