@@ -93,3 +93,18 @@ def test_seed_out_of_range_is_refused_not_a_silent_fallback():
         with pytest.raises(ValueError, match=r"`random_state` must be None, an int in \[0, "):
             CostPolicyWrapper(FrozenEstimator(model), costs={"fp": 1, "fn": 5},
                               strategy="tuned", random_state=seed).fit(X[200:], y[200:])
+
+
+def test_prevalence_drift_display_refuses_a_class_index_by_name(wine_proba):
+    from probwrap.plot import PrevalenceDriftDisplay
+    from probwrap.shift import PriorEstimator
+
+    y, P = wine_proba
+    binary = y == 0
+    P2 = np.c_[1 - P[:, 0], P[:, 0]]
+    est = PriorEstimator().fit(P2, binary.astype(int))
+    for bad in (2, -1, 1.0, True):
+        with pytest.raises(ValueError, match=r"`class_index` must be a whole number in \[0, 2\)"):
+            PrevalenceDriftDisplay.from_predictions(P2, est, batch_size=60, class_index=bad)
+    shown = PrevalenceDriftDisplay.from_predictions(P2, est, batch_size=60, class_index=np.int64(1))
+    assert shown.source_prevalence == pytest.approx(est.source_prior_[1])

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import numbers
 import warnings
 from typing import Any
 
@@ -80,9 +81,7 @@ class PrevalenceDriftDisplay:
             raise ValueError(
                 f"`table` must be the structured array of prior_by_batch; it lacks {missing}."
             )
-        k = table["prior"].shape[1]
-        if not 0 <= int(class_index) < k:
-            raise ValueError(f"`class_index` must lie in [0, {k}); got {plain(class_index)!r}.")
+        _check_class_index(class_index, table["prior"].shape[1])
         self.table = table
         self.class_index = int(class_index)
         self.source_prevalence = None if source_prevalence is None else float(source_prevalence)
@@ -124,6 +123,7 @@ class PrevalenceDriftDisplay:
         table = prior_by_batch(
             prior_estimator, proba, batches, batch_size=batch_size, sample_weight=sample_weight
         )
+        _check_class_index(class_index, len(prior_estimator.source_prior_))
         source = prior_estimator.source_prior_[class_index]
         return cls(
             table=table, source_prevalence=source, class_index=class_index, alpha=alpha
@@ -151,6 +151,7 @@ class PrevalenceDriftDisplay:
                 f"`estimator` must be a fitted PriorShiftWrapper; got {type(estimator).__name__}."
             )
         table = estimator.monitor(X, batches, batch_size=batch_size, sample_weight=sample_weight)
+        _check_class_index(class_index, len(estimator.source_prior_))
         return cls(
             table=table, source_prevalence=estimator.source_prior_[class_index],
             class_index=class_index, alpha=alpha,
@@ -312,3 +313,11 @@ class ClassPriorDisplay:
         self.ax_ = ax
         self.figure_ = ax.figure
         return self
+
+
+def _check_class_index(class_index: Any, k: int) -> None:
+    """``class_index`` must be a whole number in [0, k)."""
+    if (isinstance(class_index, bool) or not isinstance(class_index, numbers.Integral)
+            or not 0 <= class_index < k):
+        raise ValueError(f"`class_index` must be a whole number in [0, {k}) (one of the "
+                         f"{k} classes); got {plain(class_index)!r}.")
