@@ -243,11 +243,17 @@ def _replay(rec: dict, rule: dict) -> str:
     # simplicity order as in _simplicity_order
     share = float(np.bincount(y, weights=w, minlength=2).min() / w.sum()) if binary else 0.5
 
+    # Platt before temperature: as auto does now (below its minority share, the draws being of
+    # frozen models) unless the rule says otherwise ("platt_first": False = never)
+    platt_first = rule.get("platt_first")
+    max_share = rule.get("platt_first_max_share",
+                         1.0 if platt_first else A._PLATT_FIRST_MAX_MINORITY_SHARE)
+
     def _complexity(nm: str) -> float:
         c = CALIBRATION_METHODS[nm]().complexity
-        if (binary and rule.get("platt_first") and nm == "platt"
+        if (binary and platt_first is not False and nm == "platt"
                 and int(np.sum(w > 0)) >= rule.get("platt_first_min_rows", 0)
-                and share < rule.get("platt_first_max_share", 1.0)):
+                and share < max_share):
             c = CALIBRATION_METHODS["temperature"]().complexity - 0.5  # just before temperature
         return c
 
@@ -277,6 +283,7 @@ def _replay(rec: dict, rule: dict) -> str:
 
 RULES = {
     "as auto is now": {},
+    "before the fifteenth session": {"order_min_class": 20, "platt_first": False},
     "order maps need 8/class (before)": {"order_min_class": 8},
     "no race below 30 rows": {"race_min": 30},
     "no race": {"race": False},
