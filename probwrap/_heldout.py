@@ -150,10 +150,9 @@ def _fit_predict_fold(
               if not isinstance(value, (str, dict)) and row_count(value) == n else value)
         for key, value in params.items()
     }
-    with warnings.catch_warnings():
-        warnings.filterwarnings("ignore", message="Number of classes in training fold")
-        model = clone(estimator).fit(_safe_indexing(X, train), y[train], **fold_params)
-        out = np.asarray(getattr(model, response)(_safe_indexing(X, test)), dtype=float)
+    # (a class absent from the training rows is reported once by the caller, for every fold)
+    model = clone(estimator).fit(_safe_indexing(X, train), y[train], **fold_params)
+    out = np.asarray(getattr(model, response)(_safe_indexing(X, test)), dtype=float)
     return np.asarray(model.classes_), out
 
 
