@@ -17,6 +17,7 @@ from sklearn.utils import check_random_state
 
 from ._column_models import ProbabilityColumn
 from ._cost_policy_summary import CURVE_POINTS, SMALL_HELDOUT_ROWS, _heldout_summary
+from ._heldout import row_count
 from ._validation import plain
 from .decision import (
     apply_class_offsets,
@@ -175,7 +176,8 @@ class _RuleFitting:
 
     def _row_costs(self, X: Any, k: int) -> np.ndarray:
         out = self.costs(X)
-        n = _num_rows(X)
+        n = row_count(X)
+        n = len(X) if n is None else n
         return check_row_costs(out, n, n_classes=k, name="costs(X)")
 
     def _resolve_actions(self, n_actions: int) -> np.ndarray:
@@ -363,13 +365,6 @@ def _check_cutoff(cutoff: Any) -> float:
     if not 0.0 <= value <= 1.0:
         raise ValueError(f"`cutoff` must be a probability in [0, 1]; got {plain(cutoff)!r}.")
     return value
-
-
-def _num_rows(X: Any) -> int:
-    shape = getattr(X, "shape", None)
-    if shape is not None and len(shape) > 0:
-        return int(shape[0])
-    return len(X)
 
 
 def _cutoff_at_bin_edge(tally: Any, cutoff: float) -> float:

@@ -116,14 +116,15 @@ def _predict_in_chunks(method: Any, X: Any) -> np.ndarray:
 
 
 def row_count(value: Any) -> int | None:
-    """Row count of ``value`` when it has one (arrays, frames, sparse matrices, lists), else None."""
+    """Row count of ``value`` when it has one (arrays, frames, sparse matrices, sequences), else
+    None (scalars, strings, mappings, lazy frames of unknown length)."""
     shape = getattr(value, "shape", None)
     if shape is not None:
         try:
             return int(shape[0]) if len(shape) else None
         except TypeError:  # a lazy frame with an unknown row count
             return None
-    if isinstance(value, (list, tuple)):
+    if hasattr(value, "__len__") and not isinstance(value, (str, bytes, dict)):
         return len(value)
     return None
 
@@ -147,7 +148,7 @@ def _fit_predict_fold(
     n = y.shape[0]
     fold_params = {
         key: (_safe_indexing(value, train)
-              if not isinstance(value, (str, dict)) and row_count(value) == n else value)
+              if row_count(value) == n else value)
         for key, value in params.items()
     }
     # (a class absent from the training rows is reported once by the caller, for every fold)
