@@ -149,24 +149,15 @@ def cutoff_summary(
         )
     flagged = mean(scores > res.cutoff)
     realised = matrix[y, 1]
-    # Cutoffs are "act when score > c". Above the top score every cutoff acts on no row; for
-    # probabilities the search may place such a cutoff past 1 (when a row scores exactly 1),
-    # where 1 acts on the same rows (none): probability cutoffs are kept in [0, 1] that way.
-    # (Below 0 is kept: only a cutoff below 0 acts on rows scored exactly 0.)
-    top = 1.0 if scale == "proba" else np.inf
-
-    def within(c: float) -> float:
-        return float(min(c, top))
-
     out: dict[str, Any] = {
         "n_rows": int(scores.shape[0]),
         "n_positive": int(y.sum()),
         "score_scale": scale,
         "costs": {key: float(costs.get(key, 0.0)) for key in ("tp", "fp", "fn", "tn")},
         "capacity": capacity,
-        "cutoff": within(res.cutoff),
-        "cutoff_range": [within(res.interval[0]), within(res.interval[1])],
-        "cutoff_interval": None if ci is None else [within(ci.low), within(ci.high)],
+        "cutoff": float(res.cutoff),
+        "cutoff_range": [float(res.interval[0]), float(res.interval[1])],
+        "cutoff_interval": None if ci is None else [float(ci.low), float(ci.high)],
         "confidence_level": float(confidence_level),
         "n_resamples": int(n_resamples),
         "expected_cost": float(res.cost) * unit,
@@ -207,7 +198,7 @@ def cutoff_summary(
             settled = settle_cutoff(scores, y, matrix, res, sample_weight=sample_weight,
                                     anchor=anchor)
             out["settled_cutoff"] = {
-                "cutoff": within(settled.cutoff),
+                "cutoff": settled.cutoff,
                 "expected_cost": mean_cost(
                     matrix[y, (scores > settled.cutoff).astype(np.intp)]),
                 "is_bayes_cutoff": bool(settled.cutoff == bayes),
@@ -225,7 +216,7 @@ def cutoff_summary(
             "target": g.target,
             "method": g.method,
             "confidence": g.confidence,
-            "cutoff": within(g.cutoff),
+            "cutoff": g.cutoff,
             "expected_cost": g.cost * unit,
             "flagged_share": mean(scores > g.cutoff),
             "achieved": g.achieved,
