@@ -217,3 +217,52 @@ def test_frozen_model_predicted_in_row_blocks_gives_the_one_call_result(monkeypa
         flagged = fitted.predict(X) == 1
         cost = np.where(flagged, np.where(y == 1, 0.0, 1.0), np.where(y == 1, 4.0, 0.0))
         assert fitted.heldout_cost_ == pytest.approx(cost.mean(), rel=1e-12)
+
+
+def _tie_starts_direct(s):
+    """The tie rule of ``_tie_starts`` evaluated pair by pair over all rows (its definition)."""
+    n = s.shape[0]
+    q = max((abs(float(v)) for v in (s[n // 4], s[(3 * n) // 4]) if np.isfinite(v)), default=0.0)
+    tol = np.maximum(np.minimum(np.abs(s[1:]), np.abs(s[:-1])), q) * (8 * np.finfo(float).eps)
+    with np.errstate(invalid="ignore"):
+        return np.concatenate([[True], s[1:] - s[:-1] > tol])
+
+
+def test_tie_pass_and_separation_shortcuts_equal_their_definitions():
+    from probwrap.calibration._isotonic import _tie_starts
+    from probwrap.calibration._platt import _separated
+
+    eps = np.finfo(float).eps
+    rng = np.random.default_rng(11)
+    for trial in range(60):
+        # most scores of size about 1, plus clusters of near ties (0-20 units of rounding apart)
+        # at sizes from 1e-3 to 1e3, so that both the quartiles' and the pair's own size set
+        # the tolerance somewhere; infinite scores now and then
+        body = rng.normal(size=int(rng.integers(2, 200)))
+        centres = rng.normal(size=4) * 10.0 ** rng.integers(-3, 4, size=4)
+        clusters = [c * (1 + eps * np.cumsum(rng.integers(0, 20, size=6))) for c in centres]
+        s = np.concatenate([body, *clusters])
+        if trial % 7 == 0:
+            s[:3] = np.inf
+        if trial % 11 == 0:
+            s[-1] = -np.inf
+        s = np.sort(s)
+        first = np.ones(s.shape[0], dtype=bool)
+        _tie_starts(s, first)
+        np.testing.assert_array_equal(first, _tie_starts_direct(s))
+    for trial in range(60):
+        # separation read off the two sorted classes equals _separated on the rows: classes
+        # split at a cut, with rows tied at the cut in either class, or one row across it
+        n = int(rng.integers(2, 60))
+        sf = np.round(rng.normal(size=n), 1)
+        cut = sf[int(rng.integers(0, n))]
+        y = (sf > cut).astype(float)
+        at = np.flatnonzero(sf == cut)
+        y[at] = rng.random(at.size) < 0.5
+        if trial % 4 == 0:
+            y[int(rng.integers(0, n))] = 1.0 - y[int(rng.integers(0, n))]
+        if trial % 3 == 0:
+            y = 1.0 - y
+        got: list[bool] = []
+        _pool_ties(sf, y, np.ones(n), separation=got)
+        assert got == [_separated(sf, y, np.ones(n))]

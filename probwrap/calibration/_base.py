@@ -262,8 +262,12 @@ class CalibrationMap(BaseEstimator):
         self.floor_ = 0.0
         if s.ndim == 1:
             y01, classes = check_binary_labels(y, name="y")
+            # class totals (the weights are non-negative, so a total is 0 only when every
+            # weight of the class is; a sum of positive doubles never rounds to 0)
+            with np.errstate(over="ignore"):  # a total beyond the largest double is inf, > 0
+                totals = (float(w @ (1.0 - y01)), float(w @ y01))
             for k in (0, 1):
-                if not np.any(w[y01 == k] > 0):
+                if not totals[k] > 0:
                     raise ValueError(
                         f"`sample_weight` is zero for every row of class {plain(classes[k])!r}; "
                         "each of the two classes needs some positive weight."

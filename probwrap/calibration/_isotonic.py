@@ -35,23 +35,36 @@ def _tie_starts(s: np.ndarray, first: np.ndarray) -> None:
     n = s.shape[0]
     if n < 2:
         return
-    q = [abs(float(v)) for v in (s[n // 4], s[(3 * n) // 4]) if np.isfinite(v)]
-    tol = np.minimum(np.abs(s[1:]), np.abs(s[:-1]))
-    np.maximum(tol, max(q, default=0.0), out=tol)
-    tol *= TIE_ULPS * np.finfo(float).eps
+    q = max((abs(float(v)) for v in (s[n // 4], s[(3 * n) // 4]) if np.isfinite(v)), default=0.0)
     with np.errstate(invalid="ignore", over="ignore"):  # inf - inf: equal, tied
-        np.greater(s[1:] - s[:-1], tol, out=first[1:])
+        gap = s[1:] - s[:-1]
+        # Every pair's tolerance is at most the one at the larger end magnitude (the scores are
+        # sorted), so one comparison against that bound clears all but the few close pairs;
+        # only those get their own tolerance. (NaN gaps, from inf - inf, are kept as candidates.)
+        bound = TIE_ULPS * np.finfo(float).eps * max(abs(float(s[0])), abs(float(s[-1])), q)
+        np.greater(gap, bound, out=first[1:])
+    close = np.flatnonzero(~first[1:])
+    if close.size == 0:
+        return
+    tol = np.minimum(np.abs(s[close + 1]), np.abs(s[close]))
+    np.maximum(tol, q, out=tol)
+    tol *= TIE_ULPS * np.finfo(float).eps
+    with np.errstate(invalid="ignore"):
+        first[close + 1] = gap[close] > tol
 
 
 def _pool_ties(
-    scores: np.ndarray, y: np.ndarray, w: np.ndarray, *, unit_weight_as_none: bool = False
+    scores: np.ndarray, y: np.ndarray, w: np.ndarray, *, unit_weight_as_none: bool = False,
+    separation: list[bool] | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Sort once and pool tied scores (equal to a few units of rounding, see ``_tie_starts``;
     each group is represented by its smallest score).
 
     Rows of zero weight carry no information and are left out. Returns the distinct scores
     (increasing), the total weight of each (``None`` for all-ones weights without ties when
-    ``unit_weight_as_none``) and the weighted sum of the labels of each.
+    ``unit_weight_as_none``) and the weighted sum of the labels of each. A list passed as
+    ``separation`` gets whether the scores separate the classes appended (``_separated``'s
+    answer, read off the ends of the two sorted classes where the sort is by class).
     """
     if np.all(w == 1.0) and np.all((y == 0.0) | (y == 1.0)):
         # Unit weights and 0/1 labels (the common case): sort the scores of each class
@@ -61,7 +74,14 @@ def _pool_ties(
         positive = y == 1.0
         # np.compress is several times faster than boolean-mask indexing on random masks
         neg = np.sort(np.compress(~positive, scores))
-        both = np.concatenate([neg, np.sort(np.compress(positive, scores))])
+        pos = np.sort(np.compress(positive, scores))
+        if separation is not None:
+            # _separated's test on the ends of the two sorted classes
+            separation.append(bool(neg.size and pos.size and (
+                (neg[-1] <= pos[0] and pos[-1] > neg[0])
+                or (pos[-1] <= neg[0] and neg[-1] > pos[0])
+            )))
+        both = np.concatenate([neg, pos])
         order = np.argsort(both, kind="stable")
         s = both[order]
         is_pos = (order >= neg.shape[0]).astype(float)
@@ -72,6 +92,8 @@ def _pool_ties(
         starts = np.flatnonzero(first)
         weight = np.diff(np.append(starts, s.shape[0])).astype(float)
         return s[starts], weight, np.add.reduceat(is_pos, starts)
+    if separation is not None:
+        separation.append(_separated(scores, y, w))
     keep = w > 0
     sc, yy, ww = (scores, y, w) if keep.all() else (scores[keep], y[keep], w[keep])
     order = np.argsort(sc)
@@ -184,8 +206,11 @@ class IsotonicMap(CalibrationMap):
         # the fit is a weighted mean per block, unchanged by scaling every weight; a power of two
         # (exact) keeps the block sums finite for weights near the largest double
         w = w / power_of_two_unit(w)
-        distinct, weight, label_sum = _pool_ties(scores, y, w, unit_weight_as_none=True)
-        if _separated(scores, y, w):
+        separated: list[bool] = []
+        distinct, weight, label_sum = _pool_ties(
+            scores, y, w, unit_weight_as_none=True, separation=separated
+        )
+        if separated[0]:
             self.boundary_ = "scores separate the classes: the plain fit is a 0/1 step"
         if self.smooth_targets:
             # pooled target sums: each row's target is t- plus (t+ - t-) for a positive
