@@ -117,7 +117,7 @@ def test_precision_floor_certifies_from_enough_flagged_rows():
 
 def test_unreachable_raises_never_returns_unconstrained_rule():
     s, y = gaussian_rows(20, seed=5)
-    with pytest.raises(GuaranteeUnreachableError, match="judged rows"):
+    with pytest.raises(GuaranteeUnreachableError, match="judged positive rows.*there are"):
         guaranteed_cutoff(s, y, {"fp": 1, "fn": 1}, requirement="recall", target=0.99,
                           confidence=0.95)
 
@@ -148,16 +148,48 @@ def test_weights_are_frequencies():
     assert g_w.bound == pytest.approx(g_rep.bound, rel=1e-10)
 
 
-def test_weights_summing_below_row_count_warn():
-    s, y = gaussian_rows(2000, seed=8)
-    with pytest.warns(WeightScaleWarning, match="row frequencies"):
-        with pytest.raises(GuaranteeUnreachableError):
-            guaranteed_cutoff(s, y, {"fp": 1, "fn": 1}, requirement="recall", target=0.95,
-                              sample_weight=np.full(2000, 1 / 2000))
+def test_relative_weights_count_as_kish_rows_and_their_scale_does_not_matter():
+    s, y = gaussian_rows(400, seed=8)
+    costs = {"fp": 1, "fn": 0.2}
+    plain_fit = guaranteed_cutoff(s, y, costs, requirement="recall", target=0.9)
+    # reference: scipy's exact binomial test on the unweighted miss count at the chosen cutoff
+    misses = int(np.sum((s <= plain_fit.cutoff) & (y == 1)))
+    ref = stats.binomtest(misses, int(y.sum()), 0.1, alternative="less").pvalue
+    assert plain_fit.p_value == pytest.approx(ref, rel=1e-10)
     with warnings.catch_warnings():
         warnings.simplefilter("error")
-        guaranteed_cutoff(s, y, {"fp": 1, "fn": 1}, requirement="recall", target=0.9,
-                          sample_weight=np.ones(2000))
+        for scale in (1 / 400, 0.7, 2.5):  # equal weights that are not whole numbers
+            g = guaranteed_cutoff(s, y, costs, requirement="recall", target=0.9,
+                                  sample_weight=np.full(400, scale))
+            assert g.cutoff == plain_fit.cutoff
+            assert g.p_value == pytest.approx(ref, rel=1e-9)
+    # unequal relative weights (censoring-like: a few rows carry most of the weight) give the
+    # same answer at every scale, and count fewer rows than their sum
+    w = np.random.default_rng(3).exponential(size=400) + 0.05
+    got = [guaranteed_cutoff(s, y, costs, requirement="recall", target=0.9,
+                             sample_weight=w * c) for c in (0.5, 1.0, 3.0, 10.0)]
+    assert len({g.cutoff for g in got}) == 1
+    np.testing.assert_allclose([g.p_value for g in got], got[0].p_value, rtol=1e-9)
+    pos = w[y == 1]
+    kish = pos.sum() ** 2 / (pos @ pos)
+    assert kish < pos.sum()
+    # the bound is the one-sided Clopper-Pearson (1934) bound, scipy's beta quantile, on
+    # Kish's count with the weighted miss share kept
+    k_eff = float(np.sum(w[(s <= got[1].cutoff) & (y == 1)])) * kish / pos.sum()
+    assert got[1].bound == pytest.approx(1 - stats.beta.ppf(0.9, k_eff + 1, kish - k_eff),
+                                         rel=1e-9)
+
+
+def test_whole_number_weights_with_a_common_factor_warn():
+    s, y = gaussian_rows(300, seed=12)
+    with pytest.warns(WeightScaleWarning, match="multiple of 3"):
+        guaranteed_cutoff(s, y, {"fp": 1, "fn": 0.2}, requirement="recall", target=0.9,
+                          sample_weight=np.full(300, 3))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        w = np.random.default_rng(0).integers(1, 4, 300)
+        guaranteed_cutoff(s, y, {"fp": 1, "fn": 0.2}, requirement="recall", target=0.9,
+                          sample_weight=w)
 
 
 def test_unconstrained_result_kept_for_comparison():

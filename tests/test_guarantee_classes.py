@@ -112,6 +112,19 @@ def test_weights_are_frequencies():
     assert g_w.achieved[1] == pytest.approx(g_r.achieved[1], rel=1e-12)
 
 
+def test_equal_relative_weights_give_the_unweighted_certificate():
+    # weights that are not whole numbers count as Kish's effective rows: equal ones are the
+    # unweighted rows at any scale (and sums far above the row count do not certify more)
+    p, y = _three_classes(300, 4)
+    g0 = guaranteed_class_offsets(p, y, zero_one_costs(3), recall_floors={1: 0.8})
+    for scale in (0.01, 2.5, 7.3):
+        g = guaranteed_class_offsets(p, y, zero_one_costs(3), recall_floors={1: 0.8},
+                                     sample_weight=np.full(300, scale))
+        assert g.boost == pytest.approx(g0.boost, rel=1e-12)
+        assert g.p_value == pytest.approx(g0.p_value, rel=1e-9)
+        assert g.bounds[1] == pytest.approx(g0.bounds[1], rel=1e-9)
+
+
 def test_expectation_method_is_the_inflated_miss_rate():
     # conformal risk control (Angelopoulos et al., ICLR 2024, eq. 4): (misses + 1)/(n + 1) <= alpha
     p, y = _three_classes(600, 6)

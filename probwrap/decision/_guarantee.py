@@ -214,6 +214,65 @@ def _loss_counts(requirement: str, cutoffs: np.ndarray, s: np.ndarray, yi: np.nd
     return flag_pos + flag_neg, np.full(cutoffs.shape, w_pos + w_neg)
 
 
+def counts_as_rows(w: np.ndarray, owner: str | None = None) -> bool:
+    """Whether the guarantees read weights ``w`` as row frequencies: every weight a whole
+    number (a row of weight 2 is two rows). Any other weights are relative ones (see
+    :func:`evidence_counts`).
+
+    With ``owner``, whole-number weights that all share a factor above 1 (every row weighs 3,
+    or 2, 4 and 6) warn: read as counts they say that no row was seen once, which is more
+    often a scaled weight than a count, and the guarantee is then judged on that many times
+    the rows.
+    """
+    if not np.all(w == np.round(w)):
+        return False
+    positive = w[w > 0]
+    if owner is not None and positive.size and float(positive.max()) < 2.0**53:
+        factor = int(np.gcd.reduce(positive.astype(np.int64)))
+        if factor > 1:
+            from ..calibration._base import WeightScaleWarning
+
+            warnings.warn(
+                f"{owner}: every `sample_weight` is a multiple of {factor}. Whole-number weights "
+                f"are read as row counts, so each row counts as at least {factor} independent "
+                "rows in the guarantee's test. If the weights are relative, not counts, divide "
+                f"them by {factor} (or pass non-integer weights, which are counted by Kish's "
+                "effective sample size).",
+                WeightScaleWarning,
+                stacklevel=3,
+            )
+    return True
+
+
+def evidence_counts(k: np.ndarray, n: np.ndarray, n_sq: np.ndarray, as_rows: bool
+                    ) -> tuple[np.ndarray, np.ndarray]:
+    """The loss count and number of judged rows that the binomial test and bounds read.
+
+    ``k`` and ``n`` are the weighted loss count and the weighted number of judged rows, ``n_sq``
+    the sum of the squared weights of the judged rows. With whole-number weights
+    (``as_rows``) they are counts of rows and are returned as they are. Other weights —
+    inverse-probability-of-censoring weights from
+    :func:`probwrap.late_labels.labels_at_horizon`, normalised or importance weights — carry
+    less evidence than their sum: the judged rows then count as Kish's (1965) effective
+    number, ``n_eff = n**2 / n_sq``, with the weighted loss share ``k / n`` kept, so
+    ``k_eff = k * n_eff / n``. Multiplying such weights by a constant changes neither.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.decision._guarantee import evidence_counts
+    >>> w = np.array([0.5, 1.5, 1.5, 0.5])            # four rows, Kish size 3.2
+    >>> evidence_counts(np.array([0.5]), np.array([w.sum()]), np.array([w @ w]), False)
+    (array([0.4]), array([3.2]))
+    """
+    if as_rows:
+        return k, n
+    with np.errstate(invalid="ignore", divide="ignore"):
+        n_eff = np.where(n_sq > 0, n * n / np.where(n_sq > 0, n_sq, 1.0), 0.0)
+        k_eff = np.where(n > 0, k * (n_eff / np.where(n > 0, n, 1.0)), 0.0)
+    return k_eff, n_eff
+
+
 def _upper_risk(k: float, n: float, delta: float) -> float:
     """One-sided Clopper–Pearson upper bound on a 0/1 risk (Clopper & Pearson 1934)."""
     if n <= 0:
@@ -243,8 +302,13 @@ def guaranteed_cutoff(
     ----------
     scores, y, costs, sample_weight, capacity, score_bounds
         As for :func:`search_cutoff` (``y`` coded 0/1, positive action when ``score > cutoff``).
-        Weights are row frequencies: a row of weight 2 counts as two rows in every count and
-        p-value, so the guarantee is only as good as that reading of the weights.
+        Whole-number weights are row frequencies: a row of weight 2 counts as two rows in
+        every count and p-value. Any other weights (the censoring weights of
+        :func:`probwrap.late_labels.labels_at_horizon`, normalised or importance weights) are
+        relative: each count is judged on Kish's effective number of the rows it is over,
+        ``(sum w)**2 / sum w**2``, with the weighted error share kept (see
+        :func:`evidence_counts`), so multiplying them by a constant changes nothing and rows of
+        large weight are not taken for many independent rows.
     requirement : {"recall", "precision", "false_positive_rate", "flagged_share"}
         The metric to guarantee. Recall and precision get a floor, the other two a ceiling.
     target : float in (0, 1)
@@ -298,19 +362,13 @@ def guaranteed_cutoff(
     yi = _binary_targets(y, s.shape[0])
     w = (np.ones(s.shape[0]) if sample_weight is None
          else check_sample_weight(sample_weight, s.shape[0]))
-    if sample_weight is not None and w.sum() < np.count_nonzero(w) * (1 - 1e-9):
-        from ..calibration._base import WeightScaleWarning
-
-        warnings.warn(
-            f"`sample_weight` sums to {float(w.sum()):.4g}, less than the {np.count_nonzero(w)} "
-            "rows of positive weight. The guarantee counts weights as row frequencies, so it "
-            "is judged on fewer rows than were given (and becomes harder to certify); pass "
-            "frequencies, or no weights, if each row is one observation.",
-            WeightScaleWarning,
-            stacklevel=2,
-        )
     cutoffs = np.asarray(base.cutoffs, dtype=float)
     k, n = _loss_counts(requirement, cutoffs, s, yi, w)
+    # whole-number weights are row counts; other weights count as Kish's effective rows
+    as_rows = counts_as_rows(w, None if sample_weight is None else "guaranteed_cutoff")
+    if not as_rows:
+        _, n_sq = _loss_counts(requirement, cutoffs, s, yi, w * w)
+        k, n = evidence_counts(k, n, n_sq, False)
     m = cutoffs.shape[0]
     p_values = np.full(m, np.nan)
     certified = np.zeros(m, dtype=bool)
@@ -335,7 +393,7 @@ def guaranteed_cutoff(
     admissible = certified & np.asarray(base.admissible, dtype=bool)
     if not admissible.any():
         raise GuaranteeUnreachableError(_unreachable_message(
-            requirement, t, method, delta, certified.any(), capacity, k, n, alpha
+            requirement, t, method, delta, certified.any(), capacity, k, n, alpha, as_rows
         ))
     costs_curve = np.where(admissible, base.costs, np.inf)
     best = float(costs_curve.min())
@@ -370,7 +428,7 @@ def guaranteed_cutoff(
 
 
 def _unreachable_message(requirement, target, method, delta, any_certified, capacity, k, n,
-                         alpha) -> str:
+                         alpha, as_rows: bool = True) -> str:
     side = "at least" if GUARANTEE_REQUIREMENTS[requirement] else "at most"
     what = f"{requirement.replace('_', ' ')} {side} {target:g}"
     if any_certified:
@@ -384,10 +442,17 @@ def _unreachable_message(requirement, target, method, delta, any_certified, capa
             f"(n R + 1)/(n + 1) exceeds {alpha:g} with n = {float(np.max(n)):g} rows judged."
         )
     n_need = math.ceil(math.log(delta) / math.log1p(-alpha))
+    judged = {"recall": "positive rows", "false_positive_rate": "negative rows",
+              "precision": "flagged rows", "flagged_share": "rows"}[requirement]
+    n_have = float(np.max(n)) if np.size(n) else 0.0
+    have = (f"{n_have:.4g} {judged} at most" if as_rows
+            else f"the equivalent of {n_have:.4g} {judged} at most (Kish's effective number "
+                 "of the weighted rows; the weights are not whole numbers, so they are not "
+                 "read as row counts)")
     return (
         f"No cutoff can be certified to give {what} with confidence {1 - delta:g}: the "
         f"first cutoff tested was not rejected. With no errors at all this needs at least "
-        f"{n_need} judged rows ((1 - {alpha:g})^n <= {delta:g}); otherwise the model cannot "
-        "reach the target on these rows. Lower the target or the confidence, or use more "
-        "held-out rows."
+        f"{n_need} judged {judged} ((1 - {alpha:g})^n <= {delta:g}); there are {have}. "
+        "Otherwise the model cannot reach the target on these rows. Lower the target or the "
+        "confidence, or use more held-out rows."
     )

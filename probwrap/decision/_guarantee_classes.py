@@ -48,6 +48,8 @@ from ._guarantee import (
     _miss_allowance,
     _upper_risk,
     binomial_tail_pvalue,
+    counts_as_rows,
+    evidence_counts,
 )
 from ._offsets import _envelope, _prepare
 
@@ -178,7 +180,9 @@ def guaranteed_class_offsets(
         control (Angelopoulos, Bates, Fisch, Lei & Schuster, ICLR 2024, eq. (4)), which needs a
         miss rate that moves one way with the boost and so takes exactly one floored class.
     sample_weight : array-like of shape (n,), default=None
-        Row frequencies (a row of weight 2 counts as two rows in every count and p-value).
+        Whole-number weights are row frequencies (a row of weight 2 counts as two rows in
+        every count and p-value); other weights are relative and each floored class's rows
+        count as Kish's effective number, as in :func:`guaranteed_cutoff`.
 
     Returns
     -------
@@ -286,6 +290,14 @@ def guaranteed_class_offsets(
     m = lower.shape[0]
     misses = np.maximum(totals[None, :] - hits, 0.0)
     alphas = np.array([1.0 - floors[j] for j in cls])
+    # what the tests and bounds read: whole-number weights are row counts, other weights count
+    # as Kish's effective number of each floored class's rows (see evidence_counts)
+    as_rows = counts_as_rows(
+        w, None if sample_weight is None else "guaranteed_class_offsets"
+    )
+    t_sq = (onehot * w[:, None]).sum(axis=0)
+    misses, totals_ev = evidence_counts(misses, totals[None, :], t_sq[None, :], as_rows)
+    totals_ev = totals_ev[0]
 
     p_values = np.full(m, np.nan)
     if method == "high_probability":
@@ -298,7 +310,7 @@ def guaranteed_class_offsets(
         margin = np.round(margin, 12)  # rounding noise must not reorder equal margins
         order_t = np.lexsort((-np.arange(m), -margin))
         per_class = np.column_stack([
-            binomial_tail_pvalue(misses[order_t, c_i], totals[c_i], alphas[c_i])
+            binomial_tail_pvalue(misses[order_t, c_i], totals_ev[c_i], alphas[c_i])
             for c_i in range(len(cls))
         ])
         p_seq = per_class.max(axis=1)
@@ -308,11 +320,11 @@ def guaranteed_class_offsets(
         certified = np.zeros(m, dtype=bool)
         certified[order_t[:n_ok]] = True
     else:
-        inflated = (misses[:, 0] + 1.0) / (totals[0] + 1.0)
+        inflated = (misses[:, 0] + 1.0) / (totals_ev[0] + 1.0)
         certified = inflated <= alphas[0] * (1 + 1e-12)
 
     if not certified.any():
-        raise GuaranteeUnreachableError(_unreachable(floors, method, delta, totals, cls))
+        raise GuaranteeUnreachableError(_unreachable(floors, method, delta, totals_ev, cls))
     cost_curve = np.where(certified, cost, np.inf)
     best = float(cost_curve.min())
     tol = 1e-9 * max(abs(best), float(np.max(np.abs(cost[certified]))))
@@ -327,9 +339,9 @@ def guaranteed_class_offsets(
     for c_i, j in enumerate(cls):
         achieved[j] = float(hits[i, c_i] / totals[c_i])
         if method == "high_probability":
-            bounds[j] = 1.0 - _upper_risk(float(misses[i, c_i]), float(totals[c_i]), delta)
+            bounds[j] = 1.0 - _upper_risk(float(misses[i, c_i]), float(totals_ev[c_i]), delta)
         else:
-            bounds[j] = 1.0 - float((misses[i, c_i] + 1.0) / (totals[c_i] + 1.0))
+            bounds[j] = 1.0 - float((misses[i, c_i] + 1.0) / (totals_ev[c_i] + 1.0))
     return GuaranteedOffsets(
         offsets=offsets,
         boost=boost,
