@@ -85,7 +85,7 @@ COLUMNS = [
     "shift_class", "ll_before_none", "ll_after_none", "ll_oracle_none", "ll_own_none",
     "ll_before_up", "ll_after_up", "ll_oracle_up", "ll_own_up", "q_up", "est_up",
     "ll_before_down", "ll_after_down", "ll_oracle_down", "ll_own_down", "q_down", "est_down",
-    "est_none", "q_none", "prior_exact01",
+    "est_none", "q_none", "prior_exact01", "cover_none", "cover_up", "cover_down",
     *[f"warn_{p}" for p in PARTS], "error", "seconds",
 ]
 
@@ -295,6 +295,8 @@ def cell(m0, m, X, y, tr, ho, Xte, yte, k, seed, task):
                     if not nonfinite(after):
                         r[f"ll_after_{name}"] = ll(yte[idx], after, k)
                     r[f"q_{name}"] = f"{q[cls]:.3f}"
+                    iv = np.asarray(ad.target_prior_interval_, dtype=float)
+                    r[f"cover_{name}"] = bool(np.all((iv[:, 0] <= q + 1e-9) & (q - 1e-9 <= iv[:, 1])))
                 except Exception:  # noqa: BLE001
                     err.append(f"[prior {name}] " + tb_tail())
             cats = ";".join(c for c in dict.fromkeys((fit_warn + ";" + rec.cats()).split(";")) if c)
@@ -469,6 +471,18 @@ def summary(path: Path) -> None:
             line += (f"; applied share of the moved class off by > 0.02 the wrong way: "
                      f"{int(wrong.sum())} ({int((wrong & quiet).sum())} with no warning)")
         print(line)
+    print("  95 % interval target_prior_interval_ holds every true test share (cells; missed "
+          "with no warning other than UserWarning):")
+    for n in sorted(ok.n.unique()) if "cover_none" in ok else []:
+        parts = []
+        for v in ("none", "up", "down"):
+            c = ok[ok.n == n][f"cover_{v}"].astype(str).str.lower()
+            c = c[c.isin(["true", "false"])]
+            w = ok.loc[c.index, f"warn_p{v}"].fillna("").astype(str).str.replace("UserWarning", "")
+            quiet = w.str.strip(";").eq("")
+            miss = c.eq("false")
+            parts.append(f"{v} {c.eq('true').mean():.1%} ({int((miss & quiet).sum())} quiet misses)")
+        print(f"    n={n:3d} {len(c):4d} cells: " + ", ".join(parts))
     print("\nflags:")
     for col, lab in (("pw_exact01", "frozen CalibrationWrapper exact 0/1"),
                      ("cf_exact01", "cross-fit CalibrationWrapper exact 0/1"),
