@@ -59,7 +59,11 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
 
     The plug-in rule is only as good as the probabilities: wrap a
     :class:`~probwrap.CalibrationWrapper` (``CostPolicyWrapper(CalibrationWrapper(model))``), or
-    use ``strategy="tuned"``, which corrects for miscalibration on held-out predictions.
+    use ``strategy="tuned"``, which moves the cutoff (two classes) or per-class offsets (more
+    classes) to the least cost on held-out predictions. Offsets multiply the probabilities, so
+    they cannot move rows whose probability is exactly 0 or 1 and correct less than a
+    calibration does for multiclass models: there, prefer
+    ``CostPolicyWrapper(CalibrationWrapper(model))`` (docs/decisions.md).
 
     Decisions that affect people (credit, health, fraud) need validation on data like the
     deployment data, checks of error rates across groups, a route for contested decisions, and

@@ -56,6 +56,13 @@ RECALIBRATED_ANCHOR_MAX_ROWS = SMALL_HELDOUT_ROWS
 #: R and econometrics sets 3.86 -> 1.90 (docs/small_data.md, thirteenth session).
 _ANCHOR_CANDIDATES = ("identity", "temperature", "platt", "beta")
 
+#: ``strategy="tuned"`` with more than two classes warns when at least this share of the
+#: held-out rows (by weight) give one class a probability of exactly 1 (rule of thumb): the
+#: offsets cannot move those rows (multiclass sweep over 80 R tasks, docs/small_data.md: tuned
+#: offsets 1.06-1.07x the cost of calibrating first on naive Bayes and forest cells with exact
+#: 0/1 probabilities, 1.02-1.03x elsewhere).
+CERTAIN_ROWS_SHARE = 0.1
+
 
 def recalibrated_plugin_cutoff(p, y, w, t0: float, random_state: Any) -> tuple[float, str | None]:
     """The plug-in cutoff ``t0`` carried back to the scale of the held-out probabilities ``p``
@@ -299,6 +306,25 @@ class _RuleFitting:
             cutoff = max(cutoff, cap_cut)
         self.cutoff_ = float(cutoff)
 
+    def _warn_certain_rows(self, proba, w) -> None:
+        """Say so when many held-out rows give one class a probability of exactly 1: class
+        offsets multiply the probabilities, so no offset changes what those rows get."""
+        import warnings
+
+        keep = w > 0
+        certain = (np.asarray(proba)[keep] >= 1.0).any(axis=1)
+        share = float(w[keep] @ certain) / float(w[keep].sum())
+        if share >= CERTAIN_ROWS_SHARE:
+            warnings.warn(
+                f"{type(self).__name__}: the model gives {share:.0%} of the held-out rows "
+                "(by weight) a probability of exactly 1 for one class. Tuned class offsets "
+                "multiply the probabilities, so they cannot change the decision for those rows "
+                "however miscalibrated the model is. Calibrate first: "
+                f"{type(self).__name__}(CalibrationWrapper(model), ...).",
+                UserWarning,
+                stacklevel=4,
+            )
+
     def _fit_offsets(self, ho, proba, matrix, row_costs, k, budget_index, share) -> None:
         costs = matrix if row_costs is None else row_costs
         if self.strategy == "fixed":
@@ -341,6 +367,7 @@ class _RuleFitting:
             res = tune_class_offsets(proba, ho.y_index, costs, sample_weight=ho.sample_weight)
             offsets = settle_class_offsets(proba, ho.y_index, costs, res.offsets,
                                            sample_weight=ho.sample_weight).offsets
+            self._warn_certain_rows(proba, ho.sample_weight)
         else:
             offsets = np.zeros(k)
         self.class_offsets_ = offsets

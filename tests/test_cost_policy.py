@@ -318,3 +318,34 @@ def test_tuned_fit_on_many_rows_keeps_the_thinned_curve_and_direct_heldout_cost(
     np.testing.assert_array_equal(pol.cost_curve_.flagged_share, want.flagged_share)
     # (dyadic costs: every sum is exact, so equality is exact)
     assert pol.heldout_cost_ == float(np.mean(C[y, (p > pol.cutoff_).astype(int)]))
+
+
+def test_tuned_offsets_warn_when_many_rows_are_certain():
+    # A forest on scikit-learn's wine data gives many held-out rows a probability of exactly 1
+    # for one class: offsets multiply probabilities and cannot move those rows, so the tuned
+    # multiclass rule says so; a logistic regression (no exact 1) does not warn.
+    import warnings as _w
+
+    from sklearn.datasets import load_wine
+    from sklearn.ensemble import RandomForestClassifier
+    from sklearn.frozen import FrozenEstimator
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.model_selection import train_test_split
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    from probwrap import CostPolicyWrapper
+
+    X, y = load_wine(return_X_y=True)
+    Xa, Xb, ya, yb = train_test_split(X, y, test_size=0.5, stratify=y, random_state=0)
+    costs = np.array([[0, 1, 1], [2, 0, 2], [3, 3, 0]], dtype=float)
+    forest = RandomForestClassifier(50, random_state=0).fit(Xa, ya)
+    certain = float(np.mean(forest.predict_proba(Xb).max(axis=1) == 1.0))
+    assert certain >= 0.1  # the premise: many exact 1s on these rows
+    with pytest.warns(UserWarning, match=r"exactly 1 for one class.*Calibrate first"):
+        CostPolicyWrapper(FrozenEstimator(forest), costs=costs, strategy="tuned").fit(Xb, yb)
+    logistic = make_pipeline(StandardScaler(), LogisticRegression(C=0.1)).fit(Xa, ya)
+    assert np.all(logistic.predict_proba(Xb) < 1.0)
+    with _w.catch_warnings():
+        _w.simplefilter("error")
+        CostPolicyWrapper(FrozenEstimator(logistic), costs=costs, strategy="tuned").fit(Xb, yb)

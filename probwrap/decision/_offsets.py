@@ -185,7 +185,8 @@ def _envelope(A: np.ndarray, B: np.ndarray):
         Ac = A[rows, cur][:, None]
         Bc = B[rows, cur][:, None]
         steeper_down = B < Bc
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            # a switch point beyond the largest double is inf: "never", as intended
             tb = (A - Ac) / (Bc - B)
         tb = np.where(steeper_down, np.maximum(tb, t_cur[:, None]), np.inf)
         t_next = tb.min(axis=1)
