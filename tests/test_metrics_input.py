@@ -129,8 +129,9 @@ def test_slope_needs_both_classes_and_overlap():
         calibration_slope_intercept([1, 1, 1], [0.2, 0.5, 0.7])
     with pytest.raises(ValueError, match=r"`y_true` must contain both classes"):
         calibration_slope_intercept([0, 1, 1], [0.2, 0.5, 0.7], sample_weight=[0, 1, 1])
-    with pytest.raises(ValueError, match=r"do not overlap in logit\(`y_prob`\)"):
-        calibration_slope_intercept([0, 0, 1, 1], [0.1, 0.2, 0.6, 0.7])
+    with pytest.warns(UserWarning, match=r"do not overlap in logit\(`y_prob`\)"):
+        res = calibration_slope_intercept([0, 0, 1, 1], [0.1, 0.2, 0.6, 0.7])
+    assert np.isnan(res.slope) and np.isfinite(res.intercept)
 
 
 def test_clip_warnings_and_bad_clip():

@@ -15,7 +15,7 @@ from .._validation import plain, power_of_two_unit
 from ..calibration._logodds import DEFAULT_CLIP, proba_to_log_odds
 from ._inputs import prepare_binary, warn_floored
 
-__all__ = ["CalibrationSlopeIntercept", "calibration_slope_intercept"]
+__all__ = ["CalibrationSlopeIntercept", "calibration_slope_intercept", "slope_intercept_fit"]
 
 
 @dataclass(frozen=True)
@@ -35,12 +35,16 @@ class CalibrationSlopeIntercept:
         logistic recalibration of the forecasts.
     n_iter : int
         Newton iterations used by the two fits together.
+    notes : tuple of str
+        Why ``slope`` (and ``slope_fit_intercept``) is NaN when the forecasts do not vary or
+        rank the two classes perfectly; empty otherwise. ``intercept`` is computed in both cases.
     """
 
     slope: float
     intercept: float
     slope_fit_intercept: float
     n_iter: int
+    notes: tuple[str, ...] = ()
 
 
 def _loglik(eta: np.ndarray, y: np.ndarray, w: np.ndarray) -> float:
@@ -177,8 +181,16 @@ def calibration_slope_intercept(
     Raises
     ------
     ValueError
-        When one class is missing, or when the classes do not overlap in ``logit(y_prob)`` (every
-        positive at or above every negative, or the reverse): the slope is then unbounded.
+        When one class is missing (with positive weight).
+
+    Warns
+    -----
+    UserWarning
+        When every forecast is the same, or the classes do not overlap in ``logit(y_prob)``
+        (every positive at or above every negative, or the reverse): the slope cannot be
+        estimated (it is unbounded in the second case) and is NaN, with the reason in ``notes``.
+        The intercept, an intercept-only fit with ``logit(p)`` as offset, exists whenever both
+        classes are present and is computed.
 
     Examples
     --------
@@ -188,7 +200,29 @@ def calibration_slope_intercept(
     >>> res = calibration_slope_intercept(y, p)
     >>> round(res.slope, 3), round(res.intercept, 3)
     (0.872, -0.102)
+
+    Forecasts that rank the rows perfectly leave the slope unbounded, but not the intercept:
+
+    >>> import warnings
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")
+    ...     res = calibration_slope_intercept([0, 0, 1, 1], [0.1, 0.2, 0.6, 0.7])
+    >>> res.slope, round(res.intercept, 3)
+    (nan, 0.567)
     """
+    res = slope_intercept_fit(y_true, y_prob, sample_weight=sample_weight, labels=labels,
+                              clip=clip)
+    for note in res.notes:
+        warnings.warn(note, UserWarning, stacklevel=2)
+    return res
+
+
+def slope_intercept_fit(
+    y_true: Any, y_prob: Any, *, sample_weight: Any = None, labels: Any = None,
+    clip: float = DEFAULT_CLIP,
+) -> CalibrationSlopeIntercept:
+    """:func:`calibration_slope_intercept` without its warning: a slope that cannot be estimated
+    is NaN with the reason in ``notes`` only (for callers that turn notes into their own)."""
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
     if not (isinstance(clip, (int, float)) and 0.0 < clip < 0.5):
         raise ValueError(f"`clip` must be a number in (0, 0.5); got {plain(clip)!r}.")
@@ -202,18 +236,32 @@ def calibration_slope_intercept(
     warn_floored(int(np.count_nonzero(((p < clip) | (p > 1.0 - clip)) & (w > 0))), clip,
                  "of `y_prob` lie closer than `clip` to 0 or 1")
     x = proba_to_log_odds(p, clip=clip)
-    if x[pos].min() >= x[neg].max() or x[neg].min() >= x[pos].max():
-        raise ValueError(
-            "The classes in `y_true` do not overlap in logit(`y_prob`) (every positive is at or "
-            "above every negative, or the reverse); the calibration slope is unbounded."
-        )
     keep = w > 0
     xk, yk, wk = x[keep], y[keep], w[keep]
     # frequency weights enter the likelihood as a common factor: divided by a power of two
     # (exact) near their largest, denormal or huge weights give a well-conditioned Newton step
     wk = wk / power_of_two_unit(wk)
-    beta_s, it_s = _newton_logistic(xk, yk, wk, fit_slope=True)
     beta_i, it_i = _newton_logistic(xk, yk, wk, fit_slope=False)
+    # the intercept-only fit with offset logit(p) exists whenever both classes are present; the
+    # slope needs forecasts that vary and classes that overlap in them
+    reason = None
+    if xk.min() == xk.max():
+        reason = (
+            f"Every forecast in `y_prob` is the same ({plain(float(p[keep][0]))!r}); a "
+            "calibration slope needs forecasts that vary, so the slope is NaN (the "
+            "calibration-in-the-large is computed)."
+        )
+    elif x[pos].min() >= x[neg].max() or x[neg].min() >= x[pos].max():
+        reason = (
+            "The classes in `y_true` do not overlap in logit(`y_prob`) (every positive is at or "
+            "above every negative, or the reverse); the calibration slope is unbounded, so it is "
+            "NaN (the calibration-in-the-large is computed)."
+        )
+    if reason is not None:
+        return CalibrationSlopeIntercept(slope=float("nan"), intercept=float(beta_i[0]),
+                                         slope_fit_intercept=float("nan"), n_iter=it_i,
+                                         notes=(reason,))
+    beta_s, it_s = _newton_logistic(xk, yk, wk, fit_slope=True)
     return CalibrationSlopeIntercept(
         slope=float(beta_s[1]),
         intercept=float(beta_i[0]),

@@ -25,10 +25,10 @@ from ..decision import (
 )
 from ..metrics import (
     brier_score,
-    calibration_slope_intercept,
     expected_calibration_error,
     log_loss,
 )
+from ..metrics._slope import slope_intercept_fit
 from ..plot._common import binary_labels, positive_proba
 from ..shift import PriorEstimator, adjust_to_prior, prior_by_batch, shift_cutoff
 from ._binary_labels import binary_class_names, binary_truth
@@ -145,10 +145,13 @@ def _find(chain: list[Any], cls_name: str) -> Any:
 
 def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes) -> list[MetricRow]:
     def slope(yt, yp, sample_weight=None):
-        return calibration_slope_intercept(yt, yp, sample_weight=sample_weight).slope
+        fit = slope_intercept_fit(yt, yp, sample_weight=sample_weight)
+        if fit.notes:  # forecasts that do not vary or separate the classes: no slope
+            raise ValueError(fit.notes[0])
+        return fit.slope
 
     def intercept(yt, yp, sample_weight=None):
-        return calibration_slope_intercept(yt, yp, sample_weight=sample_weight).intercept
+        return slope_intercept_fit(yt, yp, sample_weight=sample_weight).intercept
 
     specs = [
         ("brier", "Brier score", brier_score, {}, "0 (lower is better)"),

@@ -18,6 +18,8 @@ is a weighted sum of per-row values computed once:
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 from scipy.special import expit
 from sklearn.utils import check_random_state
@@ -25,10 +27,10 @@ from sklearn.utils import check_random_state
 from ..calibration import proba_to_log_odds
 from ..metrics import (
     brier_score,
-    calibration_slope_intercept,
     expected_calibration_error,
     log_loss,
 )
+from ..metrics._slope import slope_intercept_fit
 from ._common import MetricRow, NoteLog
 
 __all__ = ["FAST_BOOTSTRAP_ROWS", "fast_metric_rows"]
@@ -56,14 +58,20 @@ def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins:
         "ece": notes.compute("metric:ece", labels["ece"], expected_calibration_error, y, p,
                              n_bins=n_bins, sample_weight=w, labels=[0.0, 1.0]),
     }
-    fit = notes.compute("metric:slope", labels["slope"], calibration_slope_intercept, y, p,
+    fit = notes.compute("metric:slope", labels["slope"], slope_intercept_fit, y, p,
                         sample_weight=w, expected=(ValueError, np.linalg.LinAlgError))
+    no_slope = fit is not None and bool(fit.notes)
+    if no_slope:  # forecasts that do not vary or separate the classes: intercept only
+        notes.add("metric:slope", labels["slope"], "not computed", fit.notes[0])
+        warnings.warn(f"report, {labels['slope']}: not computed: {fit.notes[0]}", UserWarning,
+                      stacklevel=3)
     # per-row values
     p_obs = np.where(yf == 1.0, p, 1.0 - p)
     cols = [bw * (p - yf) ** 2, bw * -np.log(np.maximum(p_obs, LOG_LOSS_CLIP)), bw]
     if fit is not None:
         x = proba_to_log_odds(p, clip=_SLOPE_CLIP)
-        mu = expit(fit.slope_fit_intercept + fit.slope * x)
+        mu = (np.full_like(p, 0.5) if no_slope
+              else expit(fit.slope_fit_intercept + fit.slope * x))
         r, v = yf - mu, mu * (1.0 - mu)
         mu0 = expit(fit.intercept + x)
         cols += [bw * r, bw * r * x, bw * v, bw * v * x, bw * v * x * x, bw * (yf - mu0),
@@ -95,7 +103,8 @@ def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins:
     keys = ("brier", "log_loss", "ece", "slope", "intercept")
     ideals = ("0 (lower is better)", "0 (lower is better)", "0", "1", "0")
     values = [point["brier"], point["log_loss"], point["ece"],
-              None if fit is None else fit.slope, None if fit is None else fit.intercept]
+              None if fit is None or no_slope else fit.slope,
+              None if fit is None else fit.intercept]
     for j, (key, ideal, value) in enumerate(zip(keys, ideals, values, strict=True)):
         if value is None:
             nan = float("nan")
