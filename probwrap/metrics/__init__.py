@@ -23,6 +23,7 @@ from ._calibration import (
     reliability_table,
 )
 from ._calibration_tests import (
+    ApproximatePValueWarning,
     HosmerLemeshowResult,
     SpiegelhalterResult,
     debiased_calibration_error,
@@ -59,6 +60,7 @@ __all__ = [
     "GroupCheck",
     "GroupChecks",
     "GroupGap",
+    "ApproximatePValueWarning",
     "HosmerLemeshowResult",
     "LiftGain",
     "ReliabilityTable",

@@ -13,6 +13,7 @@ depend on the scale of the weights exactly as they depend on the number of copie
 
 from __future__ import annotations
 
+import numbers
 import warnings
 from dataclasses import dataclass
 from typing import Any
@@ -31,6 +32,7 @@ from ._inputs import (
 )
 
 __all__ = [
+    "ApproximatePValueWarning",
     "HosmerLemeshowResult",
     "SpiegelhalterResult",
     "hosmer_lemeshow_test",
@@ -40,6 +42,77 @@ __all__ = [
 ]
 
 _SETTINGS = ("fitted", "held_out")
+
+#: Smallest expected count of events and of non-events per Hosmer-Lemeshow group for the
+#: chi-square reference: 5, common practice for Pearson's chi-square (Cochran 1954's rule).
+HL_MIN_EXPECTED = 5.0
+#: Smallest expected number of events and of non-events over all rows for Spiegelhalter's normal
+#: reference: 10, our own rule of thumb (common practice for normal approximations of sums of
+#: Bernoulli terms, e.g. n p >= 10); below it the exact p-value differs visibly (6 rows with one
+#: expected event: normal 0.055 against exact 0.056, but 1 row: 2.5e-23 against 0.01).
+SPIEGELHALTER_MIN_EXPECTED = 10.0
+
+
+class ApproximatePValueWarning(UserWarning):
+    """A calibration test's large-sample reference distribution does not fit these data.
+
+    Raised by :func:`hosmer_lemeshow_test` when a group of risk expects fewer than 5 events or
+    5 non-events (``HL_MIN_EXPECTED``, common practice for Pearson's chi-square), and by
+    :func:`spiegelhalter_z_test` when all rows together expect fewer than 10 events or 10
+    non-events (``SPIEGELHALTER_MIN_EXPECTED``, our own rule of thumb). The p-value from the
+    chi-square or normal distribution can then be far from the exact one; pass
+    ``n_null_draws`` for a Monte-Carlo p-value instead.
+    """
+
+
+def _check_null_draws(n_null_draws: Any) -> int | None:
+    if n_null_draws is None:
+        return None
+    if (isinstance(n_null_draws, bool) or not isinstance(n_null_draws, numbers.Integral)
+            or n_null_draws < 1):
+        raise ValueError(
+            f"`n_null_draws` must be None or a whole number >= 1; got {plain(n_null_draws)!r}.")
+    return int(n_null_draws)
+
+
+def _null_event_counts(p: np.ndarray, w: np.ndarray, n_draws: int, rng: np.random.RandomState,
+                       chunk_rows: int) -> np.ndarray:
+    """``n_draws`` x ``chunk`` weighted event counts drawn under calibration.
+
+    A row of weight ``w`` stands for ``w`` copies, each an event with probability ``p``: its
+    count is Binomial(floor(w), p) plus ``w - floor(w)`` times a Bernoulli(p) draw (exact for
+    whole-number weights, where it equals drawing the copied rows; mean ``w p`` otherwise).
+    """
+    whole = np.floor(w)
+    frac = w - whole
+    counts = rng.binomial(whole.astype(np.int64), p, size=(n_draws, p.shape[0])).astype(float)
+    if np.any(frac > 0):
+        counts += frac * (rng.uniform(size=(n_draws, p.shape[0])) < p)
+    return counts
+
+
+def _null_draw_pvalue(statistic_of_counts, observed: float, p: np.ndarray, w: np.ndarray,
+                      n_draws: int, random_state: Any) -> tuple[float, float]:
+    """Monte-Carlo p-value ``(1 + #{T* >= T}) / (1 + B)`` (Davison & Hinkley 1997, eq. 4.11,
+    cited from memory) and its binomial standard error; the statistic of each drawn outcome set
+    is ``statistic_of_counts(counts)`` on ``(draws, n)`` weighted event counts."""
+    from sklearn.utils import check_random_state
+
+    rng = check_random_state(random_state)
+    n = p.shape[0]
+    per_block = max(1, int(2**20 // max(n, 1)))  # about 8 MB of counts at a time
+    exceed = 0
+    done = 0
+    # compare on a relative tolerance so that outcomes tied with the observed one count
+    bar = observed - 1e-10 * max(1.0, abs(observed))
+    while done < n_draws:
+        b = min(per_block, n_draws - done)
+        stats_b = statistic_of_counts(_null_event_counts(p, w, b, rng, n))
+        exceed += int(np.count_nonzero(stats_b >= bar))
+        done += b
+    pvalue = (1.0 + exceed) / (1.0 + n_draws)
+    se = float(np.sqrt(pvalue * (1.0 - pvalue) / n_draws))
+    return float(pvalue), se
 
 
 # ----------------------------------------------------------------------------------------------
@@ -66,6 +139,10 @@ class HosmerLemeshowResult:
         ``O_g``, the weighted number of positives in each group.
     expected : ndarray
         ``E_g``, the sum of the forecasts in each group.
+    reference : str
+        ``"chi-square"``, or ``"null draws"`` when ``pvalue`` is the Monte-Carlo p-value.
+    pvalue_standard_error : float
+        Binomial standard error of a Monte-Carlo ``pvalue`` (0 for the chi-square one).
     """
 
     statistic: float
@@ -74,6 +151,8 @@ class HosmerLemeshowResult:
     weight: np.ndarray
     observed: np.ndarray
     expected: np.ndarray
+    reference: str = "chi-square"
+    pvalue_standard_error: float = 0.0
 
 
 def hosmer_lemeshow_test(
@@ -84,6 +163,8 @@ def hosmer_lemeshow_test(
     setting: str = "fitted",
     sample_weight: Any = None,
     labels: Any = None,
+    n_null_draws: int | None = None,
+    random_state: Any = None,
 ) -> HosmerLemeshowResult:
     """Hosmer–Lemeshow goodness-of-fit test over groups of risk (Hosmer & Lemeshow 1980).
 
@@ -108,6 +189,15 @@ def hosmer_lemeshow_test(
       ``G - 2`` there rejects a perfectly calibrated model about 11 % of the time at the 5 %
       level for ``G = 10`` (see ``benchmarks/assessment.py``).
 
+    The chi-square reference needs enough rows: when a group expects fewer than 5 events or 5
+    non-events (common practice for Pearson's chi-square), an :class:`ApproximatePValueWarning`
+    says so. With ``n_null_draws`` (``setting="held_out"`` only) the p-value is instead a
+    Monte-Carlo one: that many outcome sets are drawn as if the forecasts were the true
+    probabilities (each row an event with probability ``p``), the groups kept, ``C`` recomputed
+    on each, and the p-value is ``(1 + #{C* >= C}) / (1 + n_null_draws)``. Under
+    ``setting="fitted"`` the null would need the model refitted on every drawn outcome set, which
+    this function cannot do.
+
     Parameters
     ----------
     y_true : array-like of shape (n,)
@@ -125,6 +215,13 @@ def hosmer_lemeshow_test(
         p-value does not depend on the scale of the weights.
     labels : array-like of shape (2,), optional
         ``[negative, positive]``.
+    n_null_draws : int, optional
+        Number of outcome sets drawn under calibration for a Monte-Carlo p-value (see above;
+        the standard error of the p-value is about ``sqrt(p (1 - p) / n_null_draws)``). A row of
+        weight ``w`` draws as ``w`` copied rows (exact for whole-number weights). None (the
+        default) keeps the chi-square p-value.
+    random_state : int, RandomState instance or None
+        Seed of the null draws (:func:`sklearn.utils.check_random_state`).
 
     Returns
     -------
@@ -146,10 +243,23 @@ def hosmer_lemeshow_test(
     >>> res = hosmer_lemeshow_test(y, p, setting="held_out")
     >>> res.dof, bool(res.pvalue > 0.05)
     (10, True)
+
+    On 30 rows the groups expect too few events for the chi-square; draw the null instead:
+
+    >>> res = hosmer_lemeshow_test(y[:30], p[:30], setting="held_out", n_null_draws=2000,
+    ...                            random_state=0)
+    >>> res.reference, bool(res.pvalue > 0.05), bool(res.pvalue_standard_error < 0.012)
+    ('null draws', True, True)
     """
     n_groups = check_n_bins(n_groups, "n_groups")
     if setting not in _SETTINGS:
         raise ValueError(f"`setting` must be one of {list(_SETTINGS)}; got {plain(setting)!r}.")
+    draws = _check_null_draws(n_null_draws)
+    if draws is not None and setting != "held_out":
+        raise ValueError(
+            "`n_null_draws` needs setting='held_out': under setting='fitted' the null "
+            "distribution needs the model refitted on every drawn outcome set."
+        )
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
     w = count_scale_weights(w, "hosmer_lemeshow_test")
     edges = _bin_edges(p, w, n_groups, "quantile")
@@ -173,6 +283,35 @@ def hosmer_lemeshow_test(
             "zero and the Hosmer-Lemeshow statistic is undefined."
         )
     statistic = float(np.sum((observed - expected) ** 2 / variance))
+    if draws is not None:
+        keep = w > 0
+        group_of = np.cumsum(used) - 1  # group index among the groups used
+        row_group = group_of[idx[keep]]
+        n_used_groups = n_used
+
+        def c_of(counts: np.ndarray) -> np.ndarray:
+            o = np.zeros((counts.shape[0], n_used_groups))
+            for j in range(n_used_groups):
+                o[:, j] = counts[:, row_group == j].sum(axis=1)
+            return np.sum((o - expected) ** 2 / variance, axis=1)
+
+        pvalue, se = _null_draw_pvalue(c_of, statistic, p[keep], w[keep], draws, random_state)
+        return HosmerLemeshowResult(statistic=statistic, pvalue=pvalue, dof=dof, weight=weight,
+                                    observed=observed, expected=expected,
+                                    reference="null draws", pvalue_standard_error=se)
+    sparse = int(np.count_nonzero((expected < HL_MIN_EXPECTED)
+                                  | (weight - expected < HL_MIN_EXPECTED)))
+    if sparse:
+        warnings.warn(
+            f"hosmer_lemeshow_test: {sparse} of {n_used} groups of risk expect fewer than "
+            f"{HL_MIN_EXPECTED:g} events or {HL_MIN_EXPECTED:g} non-events (smallest "
+            f"{float(min(expected.min(), (weight - expected).min())):.3g}); the chi-square "
+            "p-value can be far from the exact one there (5 per cell is common practice). Pass "
+            "`n_null_draws` (with setting='held_out') for a Monte-Carlo p-value, or use fewer "
+            "groups.",
+            ApproximatePValueWarning,
+            stacklevel=2,
+        )
     return HosmerLemeshowResult(
         statistic=statistic,
         pvalue=float(stats.chi2.sf(statistic, dof)),
@@ -203,16 +342,23 @@ class SpiegelhalterResult:
     expected_brier : float
         ``E0[B] = sum w p (1 - p) / W``, the Brier score expected if the forecasts were
         calibrated.
+    reference : str
+        ``"normal"``, or ``"null draws"`` when ``pvalue`` is the Monte-Carlo p-value.
+    pvalue_standard_error : float
+        Binomial standard error of a Monte-Carlo ``pvalue`` (0 for the normal one).
     """
 
     statistic: float
     pvalue: float
     brier: float
     expected_brier: float
+    reference: str = "normal"
+    pvalue_standard_error: float = 0.0
 
 
 def spiegelhalter_z_test(
-    y_true: Any, y_prob: Any, *, sample_weight: Any = None, labels: Any = None
+    y_true: Any, y_prob: Any, *, sample_weight: Any = None, labels: Any = None,
+    n_null_draws: int | None = None, random_state: Any = None,
 ) -> SpiegelhalterResult:
     """Spiegelhalter's Z test of calibration (Spiegelhalter 1986).
 
@@ -226,6 +372,13 @@ def spiegelhalter_z_test(
     no grouping. Forecasts of exactly 0, 1/2 or 1 carry no information for it (their
     ``(1 - 2p)^2 p (1 - p)`` is zero).
 
+    The normal reference needs many events and non-events: when all rows together expect fewer
+    than 10 of either (``sum w p`` or ``sum w (1 - p)``; our own rule of thumb), an
+    :class:`ApproximatePValueWarning` says so. With ``n_null_draws`` the p-value is a
+    Monte-Carlo one instead: that many outcome sets are drawn as if the forecasts were the true
+    probabilities, ``Z`` recomputed on each, and the p-value is
+    ``(1 + #{|Z*| >= |Z|}) / (1 + n_null_draws)``.
+
     Parameters
     ----------
     y_true : array-like of shape (n,)
@@ -238,6 +391,13 @@ def spiegelhalter_z_test(
         ``WeightScaleWarning``, so ``Z`` does not depend on the scale of the weights.
     labels : array-like of shape (2,), optional
         ``[negative, positive]``.
+    n_null_draws : int, optional
+        Number of outcome sets drawn under calibration for a Monte-Carlo p-value (standard
+        error about ``sqrt(p (1 - p) / n_null_draws)``). A row of weight ``w`` draws as ``w``
+        copied rows (exact for whole-number weights). None (the default) keeps the normal
+        p-value.
+    random_state : int, RandomState instance or None
+        Seed of the null draws (:func:`sklearn.utils.check_random_state`).
 
     Returns
     -------
@@ -251,10 +411,17 @@ def spiegelhalter_z_test(
     Examples
     --------
     >>> from probwrap.metrics import spiegelhalter_z_test
-    >>> res = spiegelhalter_z_test([0, 1, 1], [0.2, 0.6, 0.9])
+    >>> import warnings
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")  # 3 rows: ApproximatePValueWarning
+    ...     res = spiegelhalter_z_test([0, 1, 1], [0.2, 0.6, 0.9])
     >>> round(res.statistic, 4), round(res.pvalue, 4)
     (-0.7926, 0.428)
+    >>> res = spiegelhalter_z_test([0, 1, 1], [0.2, 0.6, 0.9], n_null_draws=4000, random_state=0)
+    >>> res.reference, round(res.pvalue, 1)
+    ('null draws', 0.6)
     """
+    draws = _check_null_draws(n_null_draws)
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
     w = count_scale_weights(w, "spiegelhalter_z_test")
     total = w.sum()
@@ -266,11 +433,37 @@ def spiegelhalter_z_test(
         )
     # (y - p)^2 - p (1 - p) = (y - p)(1 - 2p) for y in {0, 1}: the centred Brier score
     statistic = float(np.dot(w, (y - p) * (1.0 - 2.0 * p)) / np.sqrt(variance))
+    brier = float(np.dot(w, (y - p) ** 2) / total)
+    expected_brier = float(np.dot(w, p * (1.0 - p)) / total)
+    if draws is not None:
+        keep = w > 0
+        pk, wk = p[keep], w[keep]
+        slope = 1.0 - 2.0 * pk
+        centre = float(np.dot(wk * pk, slope))
+        sd = np.sqrt(variance)
+
+        def z_of(counts: np.ndarray) -> np.ndarray:  # Z is linear in the event counts
+            return np.abs((counts @ slope - centre) / sd)
+
+        pvalue, se = _null_draw_pvalue(z_of, abs(statistic), pk, wk, draws, random_state)
+        return SpiegelhalterResult(statistic=statistic, pvalue=pvalue, brier=brier,
+                                   expected_brier=expected_brier, reference="null draws",
+                                   pvalue_standard_error=se)
+    events, non_events = float(np.dot(w, p)), float(np.dot(w, 1.0 - p))
+    if min(events, non_events) < SPIEGELHALTER_MIN_EXPECTED:
+        warnings.warn(
+            f"spiegelhalter_z_test: the rows expect {events:.3g} events and {non_events:.3g} "
+            f"non-events; below {SPIEGELHALTER_MIN_EXPECTED:g} of either (our own rule of thumb) "
+            "the normal p-value can be far from the exact one. Pass `n_null_draws` for a "
+            "Monte-Carlo p-value.",
+            ApproximatePValueWarning,
+            stacklevel=2,
+        )
     return SpiegelhalterResult(
         statistic=statistic,
         pvalue=float(2.0 * stats.norm.sf(abs(statistic))),
-        brier=float(np.dot(w, (y - p) ** 2) / total),
-        expected_brier=float(np.dot(w, p * (1.0 - p)) / total),
+        brier=brier,
+        expected_brier=expected_brier,
     )
 
 
