@@ -86,8 +86,14 @@ def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, l
         out = log.compute(key, about, fn, y, p, sample_weight=w, expected=(ValueError,), **kw)
         return nan if out is None else float(out)
 
+    lacking = [int(j) for j in classes_present if not np.any(w[y == j] > 0)]
+    if lacking and group != "all":
+        log.add(key, about, "no interval",
+                f"no row of class(es) {lacking} with weight > 0: no bootstrap interval for the "
+                "Brier score or log loss (resamples within the group never hold those classes)")
+
     def interval(fn):
-        if n_resamples == 0:
+        if n_resamples == 0 or lacking:
             return _NAN2
         res = log.compute(key, about, bootstrap_interval, fn, y, p, sample_weight=w,
                           n_resamples=n_resamples, confidence_level=level, random_state=seed,
@@ -195,9 +201,12 @@ def _cell(value: float, digits: int = 4) -> str:
     return "<td>&ndash;</td>" if value != value else f"<td>{value:.{digits}f}</td>"
 
 
-def _interval(pair: tuple[float, float]) -> str:
+def _interval(pair: tuple[float, float], supported: bool = True) -> str:
     lo, hi = pair
-    return "<td>&ndash;</td>" if lo != lo else f"<td>[{lo:.4f}, {hi:.4f}]</td>"
+    if lo != lo:
+        return "<td>&ndash;</td>"
+    mark = "" if supported else ' <small class="pw-unsupported">(not supported)</small>'
+    return f"<td>[{lo:.4f}, {hi:.4f}]{mark}</td>"
 
 
 def multiclass_group_section(c: Any) -> str:
@@ -217,8 +226,8 @@ def multiclass_group_section(c: Any) -> str:
         judged = "yes" if g.judged else "<b>too small to judge</b>"
         cells = [f"<td>{_text(str(g.group))}</td>", f"<td>{g.weight:.0f}</td>",
                  f"<td>{judged}</td>", _cell(g.top_label_error), _cell(g.classwise_error),
-                 _cell(g.largest_share_gap), _cell(g.brier), _interval(g.brier_interval),
-                 _cell(g.log_loss), _interval(g.log_loss_interval)]
+                 _cell(g.largest_share_gap), _cell(g.brier), _interval(g.brier_interval, g.judged),
+                 _cell(g.log_loss), _interval(g.log_loss_interval, g.judged)]
         if rule:
             cells.append(_cell(g.mean_cost))
             cells += [_cell(float(s)) for s in g.action_shares]
@@ -236,8 +245,9 @@ def multiclass_group_section(c: Any) -> str:
         "and its mean probability, and the scores with bootstrap intervals (rows resampled "
         f"within the group).{said} Groups below {checks.min_rows:g} effective rows or "
         f"{checks.min_events:g} effective rows of any class (common practice) are listed but not "
-        "judged and left out of the gaps. Equal calibration and equal error rates across groups "
-        "are different notions of fairness; when base rates differ they cannot both hold.</p>"
+        "judged and left out of the gaps; their intervals are shown but not supported (with few "
+        "rows they cover far less than their level), and a group missing a class has none. "
+        "Equal calibration and equal error rates across groups are different notions of fairness; when base rates differ they cannot both hold.</p>"
         f'<table id="group-checks"><thead><tr>{head}</tr></thead>'
         f"<tbody>{''.join(rows)}</tbody></table>"
         + (f'<h3>Largest gaps between judged groups first</h3><ul id="group-gaps">{gaps}</ul>'

@@ -13,9 +13,12 @@ def _cell(value: float, digits: int = 4) -> str:
     return "<td>&ndash;</td>" if value != value else f"<td>{value:.{digits}f}</td>"
 
 
-def _interval(pair: tuple[float, float]) -> str:
+def _interval(pair: tuple[float, float], supported: bool = True) -> str:
     lo, hi = pair
-    return "<td>&ndash;</td>" if lo != lo else f"<td>[{lo:.4f}, {hi:.4f}]</td>"
+    if lo != lo:
+        return "<td>&ndash;</td>"
+    mark = "" if supported else ' <small class="pw-unsupported">(not supported)</small>'
+    return f"<td>[{lo:.4f}, {hi:.4f}]{mark}</td>"
 
 
 def group_section(c: Any) -> str:
@@ -36,8 +39,8 @@ def group_section(c: Any) -> str:
         cells = [f"<td>{_text(str(g.group))}</td>", f"<td>{g.weight:.0f}</td>",
                  f"<td>{judged}</td>", _cell(g.observed_rate), _cell(g.mean_forecast),
                  _cell(g.calibration_error), _cell(g.calibration_slope, 3),
-                 _cell(g.calibration_intercept, 3), _cell(g.brier), _interval(g.brier_interval),
-                 _cell(g.log_loss), _interval(g.log_loss_interval)]
+                 _cell(g.calibration_intercept, 3), _cell(g.brier), _interval(g.brier_interval, g.judged),
+                 _cell(g.log_loss), _interval(g.log_loss_interval, g.judged)]
         if decision:
             cells += [_cell(g.share_acted_on), _cell(g.false_positive_rate),
                       _cell(g.false_negative_rate), _cell(g.mean_cost)]
@@ -56,7 +59,9 @@ def group_section(c: Any) -> str:
         "2023), calibration slope and intercept (Cox 1958), scores with bootstrap intervals "
         f"(rows resampled within the group).{rule} Groups below {checks.min_rows:g} effective "
         f"rows or {checks.min_events:g} effective rows of either class (common practice) are "
-        "listed but not judged and left out of the gaps. Equal calibration and equal error "
+        "listed but not judged and left out of the gaps; their intervals are shown but not "
+        "supported (with few events they cover far less than their level), and a group with one "
+        "class has none. Equal calibration and equal error "
         "rates across groups are different notions of fairness; when base rates differ they "
         "cannot both hold.</p>"
         f'<table id="group-checks"><thead><tr>{head}</tr></thead>'
