@@ -20,7 +20,7 @@ import numpy as np
 from .._validation import check_same_length, check_target_labels, plain
 from ._bootstrap import bootstrap_interval
 from ._calibration_tests import smooth_calibration_error
-from ._inputs import prepare_binary
+from ._inputs import count_scale_weights, prepare_binary
 from ._scores import brier_score, log_loss
 from ._slope import calibration_slope_intercept
 
@@ -49,8 +49,13 @@ class GroupCheck:
     weight : float
         Total weight (the row count when unweighted).
     effective_rows, effective_positives, effective_negatives : float
-        Kish's effective sizes ``(sum w)^2 / sum w^2`` of the group and of its two classes; equal
-        to the counts when every weight is 1, and unchanged when all weights are scaled.
+        The group's rows, positives and negatives counted as the function judges them: the sums
+        of the weights read as row frequencies (weight 2 counts a row twice, so integer weights
+        give the counts of the duplicated rows). Weights summing to less than the number of
+        rows of positive weight cannot be frequencies and are first rescaled, over all rows
+        together, to sum to Kish's effective size ``(sum w)^2 / sum w^2`` (with a
+        ``WeightScaleWarning``; the project's weight contract, docs/calibration.md "Weights"),
+        so that scaling such weights changes nothing. The counts when every weight is 1.
     judged : bool
         Whether the group reaches ``min_rows`` and ``min_events``; groups not judged are listed
         but left out of the gaps.
@@ -160,9 +165,12 @@ class GroupChecks:
         return pd.DataFrame(rows)
 
 
-def _kish(w: np.ndarray) -> float:
-    s2 = float(np.dot(w, w))
-    return float(w.sum() ** 2 / s2) if s2 > 0 else 0.0
+def judged_sizes(w: np.ndarray, y: np.ndarray | None = None) -> tuple[float, ...]:
+    """Rows (and, with 0/1 labels ``y``, positives and negatives) of a group as judged: sums of
+    weights already on the row-count scale (:func:`count_scale_weights`)."""
+    if y is None:
+        return (float(w.sum()),)
+    return float(w.sum()), float(np.dot(w, y)), float(np.dot(w, 1.0 - y))
 
 
 @contextmanager
@@ -208,7 +216,7 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
                seed, notes) -> GroupCheck:
     pos = w * y
     neg = w * (1.0 - y)
-    eff_rows, eff_pos, eff_neg = _kish(w), _kish(pos), _kish(neg)
+    eff_rows, eff_pos, eff_neg = judged_sizes(w, y)
     judged = eff_rows >= min_rows and eff_pos >= min_events and eff_neg >= min_events
     total = float(w.sum())
     both = pos.sum() > 0 and neg.sum() > 0
@@ -290,8 +298,8 @@ def calibration_by_group(
     ``costs``, the mean cost per row. Then the spread of each quantity across the groups, largest
     first.
 
-    A group is *judged* when its effective size reaches ``min_rows`` rows and ``min_events`` rows
-    of each class (Kish's effective sizes, so that scaling all weights changes nothing). Smaller
+    A group is *judged* when it holds at least ``min_rows`` rows and ``min_events`` rows of each
+    class, counted with the weights as row frequencies (see ``sample_weight``). Smaller
     groups are still listed with every number that can be computed, flagged ``judged=False``,
     and left out of the gaps: a gap between two tiny groups is mostly noise. The defaults (100
     rows, 10 of each class) are common practice, not a law; a precise check of the slope needs
@@ -316,11 +324,16 @@ def calibration_by_group(
         Cost matrix (rows: true class negative/positive; columns: not acted / acted) or the
         binary shorthand ``{"tp", "fp", "fn", "tn"}``; needs ``cutoff``.
     sample_weight : array-like of shape (n,), optional
-        Row frequencies: weight 2 counts a row twice.
+        Row frequencies: weight 2 counts a row twice, so integer weights judge a group as the
+        duplicated rows would. Weights summing to less than the number of rows of positive
+        weight cannot be frequencies; they are rescaled to sum to Kish's effective sample size
+        ``(sum w)^2 / sum w^2``, with a ``WeightScaleWarning`` (the contract of
+        docs/calibration.md, "Weights"), so their scale changes nothing.
     labels : array-like of shape (2,), optional
         ``[negative, positive]``.
     min_rows, min_events : float, default=100, 10
-        Smallest effective group size, and smallest effective number of each class, judged.
+        Smallest group size, and smallest number of rows of each class, judged (weighted as
+        above).
     n_resamples : int, default=200
         Bootstrap resamples per group for the score intervals; 0 gives no intervals (NaN).
     confidence_level : float, default=0.95
@@ -346,6 +359,7 @@ def calibration_by_group(
     ('calibration_intercept', 'south')
     """
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
+    w = count_scale_weights(w, "calibration_by_group")
     g = np.asarray(groups)
     if g.ndim == 2 and g.shape[1] == 1:
         g = g[:, 0]
@@ -393,7 +407,7 @@ def calibration_by_group(
     notes = []
     if small:
         notes.append(
-            f"{len(small)} group(s) below {min_rows:g} effective rows or {min_events:g} of a class "
+            f"{len(small)} group(s) below {min_rows:g} rows or {min_events:g} of a class "
             "are listed but not judged: " + ", ".join(str(c.group) for c in small) + "."
         )
     if any(np.isfinite(c.brier_interval[0]) for c in small):

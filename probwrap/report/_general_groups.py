@@ -24,6 +24,7 @@ from ..metrics import (
     log_loss,
 )
 from ..metrics._groups import MIN_EVENTS, MIN_ROWS, GroupGap
+from ..metrics._inputs import count_scale_weights
 from ._common import NoteLog
 from ._html_parts import _text
 
@@ -68,17 +69,13 @@ class ClassGroupChecks:
     notes: list[str] = field(default_factory=list)
 
 
-def _kish(w: np.ndarray) -> float:
-    s2 = float(np.sum(w**2))
-    return float(np.sum(w)) ** 2 / s2 if s2 > 0 else 0.0
-
-
 def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, level, seed,
          min_rows, min_events, classes_present, log: NoteLog) -> ClassGroupCheck:
     key, about = f"group:{group}", f"group {group}"
-    eff_class = [_kish(w[y == j]) for j in classes_present]
+    # sizes as calibration_by_group judges them: weights on the row-count scale, summed
+    eff_class = [float(w[y == j].sum()) for j in classes_present]
     rarest = float(min(eff_class)) if eff_class else 0.0
-    eff = _kish(w)
+    eff = float(w.sum())
     judged = eff >= min_rows and rarest >= min_events
     nan = float("nan")
 
@@ -170,6 +167,7 @@ def multiclass_by_group(
         raise ValueError("`groups` has missing values; give every row a group (e.g. "
                          "'unknown').")
     w = np.ones(n) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    w = count_scale_weights(w, "report, by group")
     present = np.flatnonzero(np.bincount(y_index, weights=w, minlength=k) > 0)
     n_actions = None if action_names is None else len(action_names)
     log = NoteLog()
@@ -187,7 +185,7 @@ def multiclass_by_group(
     judged = sorted((c for c in checks if c.judged), key=lambda c: -np.nan_to_num(
         c.top_label_error, nan=-1.0))
     small = sorted((c for c in checks if not c.judged), key=lambda c: -c.weight)
-    notes = [f"{c.group}: too small to judge ({c.effective_rows:.0f} effective rows, "
+    notes = [f"{c.group}: too small to judge ({c.effective_rows:.0f} rows, "
              f"{c.rarest_class_rows:.0f} of its rarest class)" for c in small]
     notes += [f"{n.about}: {n.kind}: {n.message}" + (f" ({n.count} times)" if n.count > 1
                                                        else "") for n in log.notes]
@@ -224,7 +222,7 @@ def multiclass_group_section(c: Any) -> str:
     rows = []
     for g in [*checks.groups, checks.overall]:
         judged = "yes" if g.judged else "<b>too small to judge</b>"
-        cells = [f"<td>{_text(str(g.group))}</td>", f"<td>{g.weight:.0f}</td>",
+        cells = [f"<td>{_text(str(g.group))}</td>", f"<td>{g.effective_rows:.0f}</td>",
                  f"<td>{judged}</td>", _cell(g.top_label_error), _cell(g.classwise_error),
                  _cell(g.largest_share_gap), _cell(g.brier), _interval(g.brier_interval, g.judged),
                  _cell(g.log_loss), _interval(g.log_loss_interval, g.judged)]
@@ -243,9 +241,11 @@ def multiclass_group_section(c: Any) -> str:
         f"<p>The checks above, group by group: top-label and classwise calibration error "
         f"(plain binned estimates, {checks.n_bins} equal-width bins), the largest gap between a class's observed share "
         "and its mean probability, and the scores with bootstrap intervals (rows resampled "
-        f"within the group).{said} Groups below {checks.min_rows:g} effective rows or "
-        f"{checks.min_events:g} effective rows of any class (common practice) are listed but not "
-        "judged and left out of the gaps; their intervals are shown but not supported (with few "
+        f"within the group).{said} Groups below {checks.min_rows:g} rows or "
+        f"{checks.min_events:g} rows of any class (common practice) are listed but not "
+        "judged and left out of the gaps (rows are counted with the weights as row frequencies; "
+        "weights summing to less than the number of rows are first rescaled to Kish's "
+        "effective size); their intervals are shown but not supported (with few "
         "rows they cover far less than their level), and a group missing a class has none. "
         "Equal calibration and equal error rates across groups are different notions of fairness; when base rates differ they cannot both hold.</p>"
         f'<table id="group-checks"><thead><tr>{head}</tr></thead>'

@@ -36,7 +36,7 @@ def group_section(c: Any) -> str:
     rows = []
     for g in [*checks.groups, checks.overall]:
         judged = "yes" if g.judged else "<b>too small to judge</b>"
-        cells = [f"<td>{_text(str(g.group))}</td>", f"<td>{g.weight:.0f}</td>",
+        cells = [f"<td>{_text(str(g.group))}</td>", f"<td>{g.effective_rows:.0f}</td>",
                  f"<td>{judged}</td>", _cell(g.observed_rate), _cell(g.mean_forecast),
                  _cell(g.calibration_error), _cell(g.calibration_slope, 3),
                  _cell(g.calibration_intercept, 3), _cell(g.brier), _interval(g.brier_interval, g.judged),
@@ -57,9 +57,11 @@ def group_section(c: Any) -> str:
         '<section id="by-group"><h2>By group</h2>'
         "<p>The checks above, group by group: smooth calibration error (Błasiok &amp; Nakkiran "
         "2023), calibration slope and intercept (Cox 1958), scores with bootstrap intervals "
-        f"(rows resampled within the group).{rule} Groups below {checks.min_rows:g} effective "
-        f"rows or {checks.min_events:g} effective rows of either class (common practice) are "
-        "listed but not judged and left out of the gaps; their intervals are shown but not "
+        f"(rows resampled within the group).{rule} Groups below {checks.min_rows:g} rows "
+        f"or {checks.min_events:g} rows of either class (common practice) are "
+        "listed but not judged and left out of the gaps (rows are counted with the weights as "
+        "row frequencies; weights summing to less than the number of rows are first rescaled "
+        "to Kish's effective size); their intervals are shown but not "
         "supported (with few events they cover far less than their level), and a group with one "
         "class has none. Equal calibration and equal error "
         "rates across groups are different notions of fairness; when base rates differ they "
