@@ -210,7 +210,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
 
     with Stages("report", ["reading", "computing the report", "writing"]) as stages:
         stages.start("reading")
-        frame = read_table(args.scores, exact=columns)
+        frame = read_table(args.scores, exact=columns, text=_text_columns(args))
         P = probabilities(args.scores, frame)
         y = _class_labels(frame, args, columns)
         q = None
@@ -301,8 +301,15 @@ def _class_labels(frame, args: argparse.Namespace, columns: list[str]) -> np.nda
     return y.astype(np.intp)
 
 
+def _text_columns(args: argparse.Namespace) -> list[str]:
+    """Columns read as the text they hold: the --group-column (``01`` and ``1`` are two groups,
+    ``NA`` is a group, as ``calibrate apply`` keeps the columns it passes through)."""
+    return [] if args.group_column is None else [args.group_column]
+
+
 def _group_labels(frame, column: str, path: str) -> np.ndarray:
-    """The --group-column as text labels; an empty cell is refused (never silently dropped)."""
+    """The --group-column as text labels, exactly as written (read with :func:`_text_columns`);
+    an empty cell is refused (never silently dropped)."""
     if column not in frame.columns:
         raise DataError(f"{path}: no column {shown(column)} (--group-column); the columns are "
                         f"{', '.join(shown(str(c)) for c in frame.columns)}")
@@ -396,7 +403,8 @@ def _handler(args: argparse.Namespace) -> int:
             )
     with Stages("report", ["reading", "computing the report", "writing"]) as stages:
         stages.start("reading")
-        frame = read_table(args.scores, exact=[args.score_column, *(late_columns or [])])
+        frame = read_table(args.scores, exact=[args.score_column, *(late_columns or [])],
+                           text=_text_columns(args))
         p = read_scores(frame, args.score_column, args.scores, scale=args.scale)
         late = None
         if late_columns is None:

@@ -20,7 +20,8 @@ from ._common import DataError, clean, one_line, require, shown, table_kind
 __all__ = ["read_table", "no_column", "numeric_column", "probability_column", "read_labels"]
 
 
-def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = False) -> Any:
+def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = False,
+               text: Iterable[str] = ()) -> Any:
     """Read a CSV or Parquet file into a pandas DataFrame (Parquet by extension; CSV otherwise).
 
     The columns named in ``exact`` are read from CSV as text, so :func:`numeric_column` turns
@@ -34,6 +35,10 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     when it has a named or non-default one, becomes an ordinary column so that it is written
     out too. The columns in ``exact`` still read empty fields and pandas' usual missing-value
     words as missing.
+
+    ``text``: columns read from CSV as the text they hold, nothing taken for a missing value
+    but an empty field (group labels: ``01`` and ``1`` stay two labels, ``NA`` stays ``NA``);
+    the other columns are read as usual.
     """
     pd = require("pandas")
     path = Path(path)
@@ -60,12 +65,20 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
             encoding = _csv_encoding(path)
             sep, decimal = _csv_dialect(path, encoding)
             text_options: dict[str, Any] = {}
+            text = [] if as_text else list(text)
+            dtype: Any = str if as_text else dict.fromkeys([*exact, *text], str)
             if as_text:
                 # only the columns that are parsed know missing values; the rest pass through
                 text_options = {"keep_default_na": False,
                                 "na_values": {c: sorted(_MISSING_WORDS) for c in exact}}
-            frame = _read_csv(pd, path, dtype=str if as_text else dict.fromkeys(exact, str),
-                              sep=sep, decimal=decimal, encoding=encoding, **text_options)
+            elif text:
+                # the text columns keep every word as written ("" is read as missing); every
+                # other column reads pandas' usual missing-value words as missing
+                names = _csv_header(path, encoding, sep) or []
+                text_options = {"keep_default_na": False, "na_values": {
+                    c: (sorted(_MISSING_WORDS) if c not in text else [""]) for c in names}}
+            frame = _read_csv(pd, path, dtype=dtype, sep=sep, decimal=decimal,
+                              encoding=encoding, **text_options)
             if as_text:  # kept as written; numeric_column reads the decimal commas
                 frame.attrs["decimal"] = decimal
             elif decimal == ",":  # columns read as text keep their decimal commas: make dots
