@@ -10,7 +10,7 @@ import numpy as np  # noqa: E402
 import pytest  # noqa: E402
 
 from probwrap.datasets import make_parcels  # noqa: E402
-from probwrap.metrics import expected_calibration_error, reliability_table  # noqa: E402
+from probwrap.metrics import reliability_table, smooth_calibration_error  # noqa: E402
 from probwrap.plot import GroupReliabilityDisplay  # noqa: E402
 
 
@@ -31,9 +31,9 @@ def test_each_curve_is_its_groups_reliability_table(parcels):
         t = reliability_table(d.target[rows], p[rows], n_bins=8, labels=[0, 1])
         np.testing.assert_allclose(line.get_xdata(), t.mean_predicted, rtol=1e-12)
         np.testing.assert_allclose(line.get_ydata(), t.observed_frequency, rtol=1e-12)
+        # the legend shows calibration_by_group's measure, the smooth ECE
         assert disp.calibration_errors[name] == pytest.approx(
-            expected_calibration_error(d.target[rows], p[rows], n_bins=8, labels=[0, 1]),
-            rel=1e-12)
+            smooth_calibration_error(d.target[rows], p[rows], labels=[0, 1]), rel=1e-12)
         assert disp.effective_rows[name] == rows.sum()
 
 

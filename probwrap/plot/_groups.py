@@ -7,8 +7,9 @@ from typing import Any
 import numpy as np
 
 from .._validation import plain
-from ..metrics import expected_calibration_error, reliability_table
-from ..metrics._groups import MIN_ROWS
+from ..metrics import expected_calibration_error, reliability_table, smooth_calibration_error
+from ..metrics._groups import MIN_EVENTS, MIN_ROWS
+from ..metrics._inputs import count_scale_weights
 from ._style import PALETTE, new_axes, style_axes
 
 __all__ = ["GroupReliabilityDisplay"]
@@ -23,19 +24,26 @@ class GroupReliabilityDisplay:
 
     The companion picture of :func:`probwrap.metrics.calibration_by_group`: the same bins as
     :class:`ReliabilityDiagram` (binary, or the top-label form for class probabilities), one
-    curve per group on shared axes, each group's calibration error in the legend. Groups whose
-    effective size is below ``min_rows`` (Kish's ``(sum w)^2 / sum w^2``; 100 by default, common
-    practice) are drawn dashed and marked "too few rows to judge" rather than left out.
+    curve per group on shared axes, each group's calibration error in the legend: for binary
+    forecasts the smooth ECE (:func:`probwrap.metrics.smooth_calibration_error`), the number
+    ``calibration_by_group`` shows; for class probabilities the binned top-label error over the
+    same bins, the number the multiclass report's by-group table shows. Groups not judged by
+    ``calibration_by_group``'s rule (fewer than ``min_rows`` rows or ``min_events`` rows of a
+    class, weights read as row frequencies; 100 and 10 by default, common practice) are drawn
+    dashed and marked "too few rows to judge" rather than left out.
 
     Parameters
     ----------
     tables : dict
         Group label to :class:`probwrap.metrics.ReliabilityTable`, in the order drawn.
     calibration_errors : dict
-        Group label to its expected calibration error over the same bins.
+        Group label to its calibration error (see above).
     effective_rows : dict
-        Group label to its effective number of rows.
+        Group label to its number of rows (weighted, as judged).
     min_rows : float
+    judged : dict, optional
+        Group label to whether it is judged; by default a group is judged when its
+        ``effective_rows`` reach ``min_rows``.
 
     Attributes
     ----------
@@ -60,17 +68,19 @@ class GroupReliabilityDisplay:
     """
 
     def __init__(self, *, tables: dict, calibration_errors: dict, effective_rows: dict,
-                 min_rows: float = MIN_ROWS) -> None:
+                 min_rows: float = MIN_ROWS, judged: dict | None = None) -> None:
         self.tables = tables
         self.calibration_errors = calibration_errors
         self.effective_rows = effective_rows
         self.min_rows = min_rows
+        self.judged = (judged if judged is not None
+                       else {k: v >= min_rows for k, v in effective_rows.items()})
 
     @classmethod
     def from_predictions(
         cls, y_true: Any, y_prob: Any, groups: Any, *, n_bins: int = 10,
         strategy: str = "uniform", sample_weight: Any = None, labels: Any = None,
-        min_rows: float = MIN_ROWS, ax: Any = None,
+        min_rows: float = MIN_ROWS, min_events: float = MIN_EVENTS, ax: Any = None,
     ) -> GroupReliabilityDisplay:
         """Compute each group's reliability table and draw the curves.
 
@@ -83,9 +93,13 @@ class GroupReliabilityDisplay:
         groups : array-like of shape (n,)
             Group label of each row (no missing values).
         n_bins, strategy, sample_weight, labels
-            As for :func:`probwrap.metrics.reliability_table`, within each group.
-        min_rows : float, default=100
-            Groups with fewer effective rows are drawn dashed and marked.
+            As for :func:`probwrap.metrics.reliability_table`, within each group. Weights are
+            row frequencies; weights summing to less than the number of rows are rescaled to
+            Kish's effective size, with a ``WeightScaleWarning``, as in
+            :func:`probwrap.metrics.calibration_by_group`.
+        min_rows, min_events : float, default=100, 10
+            Groups with fewer rows, or fewer rows of a class, are drawn dashed and marked
+            (``calibration_by_group``'s rule).
         ax : matplotlib Axes, optional
 
         Returns
@@ -106,13 +120,24 @@ class GroupReliabilityDisplay:
             raise ValueError(f"`y_true` has {n} rows but `y_prob` has {p.shape[0]}.")
         if not (isinstance(min_rows, (int, float)) and min_rows >= 0):
             raise ValueError(f"`min_rows` must be a number >= 0; got {plain(min_rows)!r}.")
+        if not (isinstance(min_events, (int, float)) and min_events >= 0):
+            raise ValueError(f"`min_events` must be a number >= 0; got {plain(min_events)!r}.")
         w = np.ones(n) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+        if w.shape != (n,):
+            raise ValueError(f"`sample_weight` must have shape ({n},); got shape {w.shape}.")
+        w = count_scale_weights(w, "GroupReliabilityDisplay")
         if p.ndim == 1 and labels is None:
             labels = np.unique(y_arr)
             if labels.shape[0] == 1:
                 labels = None
+        # the classes each group must hold min_events rows of: the two labels (binary), or every
+        # class with weight somewhere (class probabilities), as the tables beside it count them
+        if p.ndim == 1:
+            classes = [] if labels is None else list(np.asarray(labels))
+        else:
+            classes = list(np.unique(y_arr[w > 0]))
         found, first = np.unique(g, return_index=True)
-        tables, errors, eff = {}, {}, {}
+        tables, errors, eff, judged = {}, {}, {}, {}
         for label in found[np.argsort(first)]:
             rows = g == label
             key = label.item() if hasattr(label, "item") else label
@@ -121,11 +146,18 @@ class GroupReliabilityDisplay:
             if labels is not None:  # 1-d: the two labels; 2-d: the labels of the columns
                 kw["labels"] = labels
             tables[key] = reliability_table(y_arr[rows], p[rows], **kw)
-            errors[key] = float(expected_calibration_error(y_arr[rows], p[rows], **kw))
-            s2 = float(np.sum(ww**2))
-            eff[key] = float(ww.sum()) ** 2 / s2 if s2 > 0 else 0.0
+            if p.ndim == 1:
+                err_kw = {"sample_weight": ww}
+                if labels is not None:
+                    err_kw["labels"] = labels
+                errors[key] = float(smooth_calibration_error(y_arr[rows], p[rows], **err_kw))
+            else:
+                errors[key] = float(expected_calibration_error(y_arr[rows], p[rows], **kw))
+            eff[key] = float(ww.sum())
+            sizes = [float(ww[y_arr[rows] == c].sum()) for c in classes]
+            judged[key] = bool(eff[key] >= min_rows and min(sizes, default=0.0) >= min_events)
         disp = cls(tables=tables, calibration_errors=errors, effective_rows=eff,
-                   min_rows=min_rows)
+                   min_rows=min_rows, judged=judged)
         return disp.plot(ax=ax)
 
     def plot(self, ax: Any = None) -> GroupReliabilityDisplay:
@@ -137,7 +169,7 @@ class GroupReliabilityDisplay:
         self.lines_ = {}
         top = False
         for i, (group, t) in enumerate(self.tables.items()):
-            small = self.effective_rows[group] < self.min_rows
+            small = not self.judged[group]
             top = top or bool(getattr(t, "top_label", False))
             label = (f"{group} (error {self.calibration_errors[group]:.3f}"
                      + (", too few rows to judge)" if small else ")"))
