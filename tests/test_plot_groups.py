@@ -63,8 +63,8 @@ def test_top_label_form_and_bad_groups():
     disp = GroupReliabilityDisplay.from_predictions(three.target, three.true_proba, g)
     assert all(t.top_label for t in disp.tables.values())
     assert disp.ax_.get_ylabel() == "accuracy of the top class"
-    with pytest.raises(ValueError, match="`groups` must have shape"):
+    with pytest.raises(ValueError, match="`groups` has 10 labels but there are 1500 rows"):
         GroupReliabilityDisplay.from_predictions(three.target, three.true_proba, g[:10])
-    with pytest.raises(ValueError, match="missing values"):
+    with pytest.raises(ValueError, match="3 missing label"):
         GroupReliabilityDisplay.from_predictions(
             three.target, three.true_proba, np.where(np.arange(1500) < 3, None, "x"))

@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_same_length, check_target_labels, plain
+from .._validation import check_target_labels, plain
 from ._bootstrap import bootstrap_interval
 from ._calibration_tests import smooth_calibration_error
 from ._inputs import count_scale_weights, prepare_binary
@@ -163,6 +163,68 @@ class GroupChecks:
             d["log_loss_low"], d["log_loss_high"] = d.pop("log_loss_interval")
             rows.append(d)
         return pd.DataFrame(rows)
+
+
+def _missing_label(value: Any) -> bool:
+    if value is None or type(value).__name__ in ("NAType", "NaTType"):
+        return True
+    if isinstance(value, (float, np.floating)):
+        return bool(value != value)
+    if isinstance(value, (np.datetime64, np.timedelta64)):
+        return bool(np.isnat(value))
+    return False
+
+
+def check_group_labels(groups: Any, n_rows: int) -> np.ndarray:
+    """``groups`` as a 1-d array of one known label per row, or a ``ValueError`` saying what is
+    wrong: one check shared by :func:`calibration_by_group`, the display of reliability by group
+    and the reports, so they refuse the same labels with the same words.
+
+    Refused: a single value (a column's name such as ``"region"`` instead of its values), a
+    shape other than one label per row, missing labels (``None``, NaN, ``pd.NA``, ``NaT``) and
+    labels mixing numbers and strings.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> check_group_labels(["north", "south", "north"], 3).tolist()
+    ['north', 'south', 'north']
+    >>> try:
+    ...     check_group_labels(np.array(["2024-01-01", "NaT"], dtype="datetime64[D]"), 2)
+    ... except ValueError as exc:
+    ...     print(str(exc)[:48])
+    `groups` contains 1 missing label(s) (None, NaN,
+    """
+    g = np.asarray(groups)
+    if g.ndim == 0:
+        raise ValueError(
+            f"`groups` must hold one label per row; got the single value {plain(g.item())!r}. "
+            "To group by a column of a table, pass the column's values (e.g. "
+            f"`frame[{plain(g.item())!r}]`), not its name."
+        )
+    if g.ndim == 2 and g.shape[1] == 1:
+        g = g[:, 0]
+    if g.ndim != 1:
+        raise ValueError(f"`groups` must be 1-d with one label per row; got shape {g.shape}.")
+    if g.shape[0] != n_rows:
+        raise ValueError(
+            f"`groups` has {g.shape[0]} labels but there are {n_rows} rows; give one label per "
+            "row.")
+    if g.dtype.kind == "f":
+        missing = np.flatnonzero(np.isnan(g))
+    elif g.dtype.kind in "mM":
+        missing = np.flatnonzero(np.isnat(g))
+    elif g.dtype.kind == "O":
+        missing = np.flatnonzero([_missing_label(v) for v in g])
+    else:
+        missing = np.empty(0, dtype=np.intp)
+    if missing.size:
+        raise ValueError(
+            f"`groups` contains {missing.size} missing label(s) (None, NaN, NA or NaT; first at "
+            f"row {int(missing[0])}); give every row a group (e.g. 'unknown')."
+        )
+    check_target_labels(g, "groups", object_numbers=True)  # numbers and strings mixed
+    return g
 
 
 def judged_sizes(w: np.ndarray, y: np.ndarray | None = None) -> tuple[float, ...]:
@@ -360,16 +422,7 @@ def calibration_by_group(
     """
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
     w = count_scale_weights(w, "calibration_by_group")
-    g = np.asarray(groups)
-    if g.ndim == 2 and g.shape[1] == 1:
-        g = g[:, 0]
-    if g.ndim != 1:
-        raise ValueError(f"`groups` must be 1-d with one label per row; got shape {g.shape}.")
-    check_same_length(("y_prob", p), ("groups", g))
-    if g.dtype.kind == "f" and np.isnan(g).any():
-        raise ValueError("`groups` contains NaN; give every row a group (e.g. 'unknown').")
-    if g.dtype.kind == "O" and any(v is None or (isinstance(v, float) and np.isnan(v)) for v in g):
-        raise ValueError("`groups` contains missing values; give every row a group.")
+    g = check_group_labels(groups, p.shape[0])
     if cutoff is not None and not (
         isinstance(cutoff, numbers.Real) and not isinstance(cutoff, bool) and 0.0 <= cutoff <= 1.0
     ):
@@ -387,7 +440,6 @@ def calibration_by_group(
     if (isinstance(n_resamples, bool) or not isinstance(n_resamples, numbers.Integral)
             or n_resamples < 0 or n_resamples == 1):
         raise ValueError(f"`n_resamples` must be 0 or a whole number >= 2; got {plain(n_resamples)!r}.")
-    check_target_labels(g, "groups", object_numbers=True)  # mixed numbers and strings
     keys, inverse = np.unique(g, return_inverse=True)
     inverse = inverse.reshape(-1)
     args = (cutoff, matrix, float(min_rows), float(min_events), int(n_resamples),

@@ -8,7 +8,7 @@ import numpy as np
 
 from .._validation import plain
 from ..metrics import expected_calibration_error, reliability_table, smooth_calibration_error
-from ..metrics._groups import MIN_EVENTS, MIN_ROWS
+from ..metrics._groups import MIN_EVENTS, MIN_ROWS, check_group_labels
 from ..metrics._inputs import count_scale_weights
 from ._style import PALETTE, new_axes, style_axes
 
@@ -108,14 +108,8 @@ class GroupReliabilityDisplay:
         """
         y_arr = np.asarray(y_true)
         p = np.asarray(y_prob, dtype=float)
-        g = np.asarray(groups)
         n = y_arr.shape[0]
-        if g.ndim != 1 or g.shape[0] != n:
-            raise ValueError(f"`groups` must have shape ({n},) (one label per row); got shape "
-                             f"{g.shape}.")
-        if (g.dtype.kind == "f" and np.isnan(g).any()) or (
-                g.dtype == object and any(v is None or v != v for v in g)):
-            raise ValueError("`groups` has missing values; give every row a group.")
+        g = check_group_labels(groups, n)
         if p.shape[0] != n:
             raise ValueError(f"`y_true` has {n} rows but `y_prob` has {p.shape[0]}.")
         if not (isinstance(min_rows, (int, float)) and min_rows >= 0):

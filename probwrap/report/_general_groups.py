@@ -23,7 +23,7 @@ from ..metrics import (
     expected_calibration_error,
     log_loss,
 )
-from ..metrics._groups import MIN_EVENTS, MIN_ROWS, GroupGap
+from ..metrics._groups import MIN_EVENTS, MIN_ROWS, GroupGap, check_group_labels
 from ..metrics._inputs import count_scale_weights
 from ._common import NoteLog
 from ._html_parts import _text
@@ -158,14 +158,7 @@ def multiclass_by_group(
     Warnings met in a group become notes naming the group (and are warned once more).
     """
     n, k = proba.shape
-    g = np.asarray(groups)
-    if g.ndim != 1 or g.shape[0] != n:
-        raise ValueError(f"`groups` must have shape ({n},) (one label per labelled row); got "
-                         f"shape {g.shape}.")
-    if g.dtype.kind == "f" and np.isnan(g).any() or g.dtype == object and any(
-            v is None or v != v for v in g):
-        raise ValueError("`groups` has missing values; give every row a group (e.g. "
-                         "'unknown').")
+    g = check_group_labels(groups, n)
     w = np.ones(n) if sample_weight is None else np.asarray(sample_weight, dtype=float)
     w = count_scale_weights(w, "report, by group")
     present = np.flatnonzero(np.bincount(y_index, weights=w, minlength=k) > 0)
