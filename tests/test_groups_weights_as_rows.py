@@ -98,8 +98,8 @@ def test_multiclass_report_groups_judge_integer_weights_as_rows():
     rep = np.repeat(np.arange(len(y)), w)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        a, _ = build_report(y_true=y, y_prob=p, sample_weight=w, groups=g, n_resamples=0)
-        b, _ = build_report(y_true=y[rep], y_prob=p[rep], groups=g[rep], n_resamples=0)
+        a, _ = build_report(y_true=y, y_prob=p, sample_weight=w, groups=g, n_resamples=10)
+        b, _ = build_report(y_true=y[rep], y_prob=p[rep], groups=g[rep], n_resamples=10)
     for ca in a.group_checks.groups:
         cb = next(c for c in b.group_checks.groups if c.group == ca.group)
         assert (ca.judged, ca.effective_rows, ca.rarest_class_rows) == (

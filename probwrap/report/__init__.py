@@ -144,7 +144,9 @@ def write_report(
     n_bins : int, default=10
         Bins of the reliability diagram and the calibration error.
     n_resamples : int, default=200
-        Bootstrap resamples for every interval.
+        Bootstrap resamples for every interval, a whole number >= 2 (checked before anything
+        is computed; every number of the report comes with its interval, so there is no
+        "without intervals" setting here).
     confidence_level : float, default=0.95
     random_state : int, RandomState or None, default=0
         Seed of the bootstraps.

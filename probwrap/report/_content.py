@@ -221,6 +221,17 @@ def collect_content(
     """
     from sklearn.utils import check_random_state
 
+    # every interval of the report is a bootstrap one: refuse a count that cannot give one here,
+    # before any work (0 used to drop the headline metrics with notes, or stop the binary
+    # report late inside the cutoff's interval)
+    if (isinstance(n_resamples, bool) or not isinstance(n_resamples, numbers.Integral)
+            or n_resamples < 2):
+        raise ValueError(
+            f"`n_resamples` must be a whole number >= 2 (the bootstrap resamples behind every "
+            f"interval of the report); got {plain(n_resamples)!r}. For numbers without "
+            "intervals, use the functions of probwrap.metrics (e.g. calibration_by_group with "
+            "n_resamples=0)."
+        )
     rng = check_random_state(random_state)
     chain = _inner_chain(model)
     policy = _find(chain, "CostPolicyWrapper")
