@@ -90,3 +90,13 @@ def test_dates_without_nat_are_groups_everywhere():
         res = calibration_by_group((y == 0).astype(int), P[:, 0], dates, n_resamples=0)
         content, _ = build_report(y_true=y, y_prob=P, groups=dates, n_resamples=10)
     assert len(res.groups) == 2 and len(content.group_checks.groups) == 2
+
+
+def test_class_probabilities_point_to_the_multiclass_checks():
+    y, P, region = _wine()
+    with pytest.raises(ValueError, match=r"`y_prob` has 3 columns: calibration_by_group checks "
+                                         r"binary forecasts.*write_report\(\.\.\., groups=\.\.\.\)"):
+        calibration_by_group(y, P, region, n_resamples=0)
+    # one class against the rest, as the message says, works
+    res = calibration_by_group((y == 2).astype(int), P[:, 2], region, n_resamples=0)
+    assert len(res.groups) == 2

@@ -420,6 +420,15 @@ def calibration_by_group(
     >>> res.gaps[0].metric, res.gaps[0].highest
     ('calibration_intercept', 'south')
     """
+    shape = np.shape(y_prob)
+    if len(shape) == 2 and shape[1] > 2:
+        raise ValueError(
+            f"`y_prob` has {shape[1]} columns: calibration_by_group checks binary forecasts (one "
+            "column, or two). For class probabilities, the multiclass report checks every group "
+            "(probwrap.report.write_report(..., groups=...), or `probwrap report "
+            "--class-columns ... --group-column ...`), and GroupReliabilityDisplay draws each "
+            "group's top-label reliability; for one class against the rest, pass that column."
+        )
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
     w = count_scale_weights(w, "calibration_by_group")
     g = check_group_labels(groups, p.shape[0])
