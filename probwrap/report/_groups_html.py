@@ -45,9 +45,18 @@ def group_section(c: Any) -> str:
             cells += [_cell(g.share_acted_on), _cell(g.false_positive_rate),
                       _cell(g.false_negative_rate), _cell(g.mean_cost)]
         rows.append(f'<tr data-group="{_text(str(g.group))}">{"".join(cells)}</tr>')
+    def _gap_interval(x: Any) -> str:
+        lo, hi = getattr(x, "interval", (float("nan"), float("nan")))
+        if lo != lo:
+            return ""
+        scale = " on the log scale" if x.metric == "calibration_slope" else ""
+        return (f"; difference {_text(str(x.highest))} minus {_text(str(x.lowest))}{scale} "
+                f"[{lo:.4f}, {hi:.4f}]" + (", which contains 0: the order of these two is not "
+                                            "established" if lo <= 0.0 <= hi else ""))
+
     gaps = "".join(
         f"<li>{_text(x.metric.replace('_', ' '))}: {x.gap:.4f} (highest "
-        f"{_text(str(x.highest))}, lowest {_text(str(x.lowest))})</li>"
+        f"{_text(str(x.highest))}, lowest {_text(str(x.lowest))}{_gap_interval(x)})</li>"
         for x in checks.gaps
     )
     rule = (f" The decision columns are for the rule &ldquo;act when p &gt; {checks.cutoff:.4f}"
@@ -68,7 +77,10 @@ def group_section(c: Any) -> str:
         "cannot both hold.</p>"
         f'<table id="group-checks"><thead><tr>{head}</tr></thead>'
         f"<tbody>{''.join(rows)}</tbody></table>"
-        + (f'<h3>Largest gaps between judged groups first</h3><ul id="group-gaps">{gaps}</ul>'
+        + (f'<h3>Largest gaps between judged groups first</h3>'
+           "<p>Each with the bootstrap interval of the difference between its two groups (rows "
+           "resampled within each group; none for the calibration error, whose resampled values "
+           f'are biased upwards).</p><ul id="group-gaps">{gaps}</ul>'
            if gaps else "<p>Fewer than two judged groups: no gaps to compare.</p>")
         + notes + "</section>"
     )
