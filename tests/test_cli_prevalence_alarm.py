@@ -11,7 +11,6 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
-from scipy.stats import norm
 
 from probwrap.cli import main
 from probwrap.cli._prevalence import prevalence_from_source
@@ -63,11 +62,16 @@ def test_json_alarm_equals_cusum_alarms_on_the_batch_estimates(files, capsys):
     first = prevalence_from_source(files["p"][:BATCH], files["source"], n_resamples=30, seed=1)
     assert batches[0]["prevalence"] == first["prevalence"]
     assert batches[0]["interval"] == first["interval"]
-    # consistency test: the alarm is cusum_alarms (defaults k=0.5, h=5) on those estimates
+    assert batches[0]["shift_statistic"] == first["shift_statistic"]
+    # consistency test: the alarm is cusum_alarms (defaults k=0.5, h=5) on the signed roots of
+    # the batches' shift statistics (each a standard normal when nothing moved)
     est = np.array([b["prevalence"] for b in batches])
-    se = np.array([b["interval"][1] - b["interval"][0] for b in batches]) / (2 * norm.ppf(0.975))
-    ref = cusum_alarms(est, files["source"], se)
+    z = np.sign(est - files["source"]) * np.sqrt([b["shift_statistic"] for b in batches])
+    ref = cusum_alarms(z, 0.0, 1.0)
     a = got["alarm"]
+    np.testing.assert_allclose(a["standardized"], z, rtol=0, atol=1e-12)
+    # a source prevalence given as exact: no labelled rows' error, the classic run length
+    assert a["labelled_share"] == 0.0 and a["warnings"] == []
     np.testing.assert_allclose(a["upper"], ref.upper, rtol=0, atol=1e-12)
     np.testing.assert_allclose(a["lower"], ref.lower, rtol=0, atol=1e-12)
     assert [x["index"] for x in a["alarms"]] == ref.alarms.tolist()

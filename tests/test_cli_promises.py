@@ -121,7 +121,7 @@ def test_report_alarm_settings_reach_the_chart(files):
                               unlabelled_prob=files["winter"], batch_size=250, n_resamples=20,
                               alarm_reference=0.25, alarm_decision_interval=3.0)
     ref = batch_alarm(content.batch_table, content.source_prevalence, reference=0.25,
-                      decision_interval=3.0)
+                      decision_interval=3.0, labelled_rows=3000.0)
     assert content.alarm.in_control_run_length == ref.in_control_run_length
     np.testing.assert_array_equal(content.alarm.result.alarms, ref.result.alarms)
     with pytest.raises(ValueError, match="`alarm_decision_interval` must be a finite number > 0"):

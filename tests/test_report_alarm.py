@@ -10,11 +10,10 @@ import re
 
 import numpy as np
 import pytest
-from scipy.stats import norm
 
 from probwrap.datasets import make_parcels
 from probwrap.report import write_report
-from probwrap.shift import cusum_alarms, cusum_run_length
+from probwrap.shift import baseline_error_run_length, cusum_alarms
 
 BATCH = 1000
 
@@ -69,20 +68,26 @@ def test_no_alarm_when_the_prevalence_stays(reports):
 
 def test_report_numbers_are_cusum_alarms_on_the_batch_table(reports):
     # consistency test: the report's chart is cusum_alarms with the documented defaults on the
-    # batch estimates, se = interval width / (2 z_0.975), against the source prevalence
+    # signed roots of the batches' shift statistics (a standard normal each when nothing moved)
     for _, c in reports.values():
         t = c.batch_table
-        se = (t["upper"][:, 1] - t["lower"][:, 1]) / (2 * norm.ppf(0.975))
-        ref = cusum_alarms(t["prior"][:, 1], c.source_prevalence, se)
+        z = np.sign(t["prior"][:, 1] - c.source_prevalence) * np.sqrt(t["shift_statistic"])
+        ref = cusum_alarms(z, 0.0, 1.0)
         np.testing.assert_allclose(c.alarm.result.upper, ref.upper, rtol=0, atol=1e-12)
         np.testing.assert_allclose(c.alarm.result.lower, ref.lower, rtol=0, atol=1e-12)
         assert c.alarm.result.alarms.tolist() == ref.alarms.tolist()
         assert (c.alarm.result.reference, c.alarm.result.decision_interval) == (0.5, 5.0)
-        # in-control ARL of the two-sided chart, k = 0.5, h = 5: 465 batches (Montgomery's
-        # table, values from memory; the Markov-chain computation is checked in
-        # test_shift_alarms.py)
-        assert c.alarm.in_control_run_length == cusum_run_length(0.0, two_sided=True)
-        assert round(c.alarm.in_control_run_length) == 465
+        # in-control ARL of the two-sided chart, k = 0.5, h = 5, with an exact baseline: 465
+        # batches (Montgomery's table, values from memory; the Markov-chain computation is
+        # checked in test_shift_alarms.py)
+        assert round(c.alarm.exact_baseline_run_length) == 465
+        # 3000 labelled rows against batches of 1000: the labelled rows take 1000 / 4000 of
+        # each batch's variance, so the quoted run length is the one reached with
+        # probability 0.9 over them, far below 465, and the report says so
+        assert c.alarm.labelled_share == pytest.approx(0.25)
+        assert c.alarm.in_control_run_length == baseline_error_run_length(0.25).assured
+        assert c.alarm.in_control_run_length < 50
+        assert any("same labelled rows" in w for w in c.alarm.warnings)
 
 
 def test_alarm_chart_renders_in_chromium(reports, tmp_path, chromium):

@@ -17,8 +17,11 @@ with ``--reference`` the two-sample score test, which also carries the labelled 
 
 With ``--batch-size N`` or ``--batch-column C`` the prevalence is also estimated batch by batch
 (in the order of each batch's first row), and a two-sided CUSUM of the batch estimates against the
-source prevalence (:func:`probwrap.shift.cusum_alarms`; standard error of each batch from its
-interval) names the batches after which a prevalence alarm fired.
+source prevalence names the batches after which a prevalence alarm fired. Each batch enters as
+the signed root of its shift test statistic (a standard normal when nothing moved,
+:func:`probwrap.shift.signed_shift_scores`); with ``--reference`` the quoted in-control run
+length is the one reached with probability 0.9 over the reference rows every batch is compared
+with (:func:`probwrap.shift.baseline_error_run_length`).
 """
 
 from __future__ import annotations
@@ -90,6 +93,7 @@ def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
         res = estimate(proba[mask], None if seed is None else seed + 1 + i)
         rows.append({"batch": str(uniq[b]), "n_rows": int(mask.sum()),
                      "prevalence": res["prevalence"], "interval": res["interval"],
+                     "shift_statistic": res["shift_statistic"],
                      "shift_pvalue": res["shift_pvalue"]})
     return rows
 
@@ -114,7 +118,8 @@ def _text(out: dict[str, Any], path: str, level: float) -> str:
     if "alarm" in out:
         a = out["alarm"]
         fired = {x["index"]: x["direction"] for x in a["alarms"]}
-        lines.append(f"  by batch ({len(out['batches'])} batches; CUSUM in standard errors)")
+        lines.append(f"  by batch ({len(out['batches'])} batches; CUSUM of the batch shift tests, "
+                     "each a standard normal when nothing moved)")
         lines.append("    batch        rows  prevalence  interval            rise   fall")
         for i, b in enumerate(out["batches"]):
             lo, hi = b["interval"]
@@ -126,9 +131,24 @@ def _text(out: dict[str, Any], path: str, level: float) -> str:
                    if a["alarms"] else "no alarm")
         lines.append(
             f"  prevalence alarm      {verdict}; two-sided CUSUM, k = {a['reference']:g}, "
-            f"h = {a['decision_interval']:g}; in control it sounds about once every "
-            f"{a['in_control_run_length']:.0f} batches"
+            f"h = {a['decision_interval']:g}"
         )
+        exact = a["exact_baseline_run_length"]
+        if a["labelled_share"] > 0:
+            lines.append(
+                f"  false alarms          in control it sounds on average not sooner than every "
+                f"{a['in_control_run_length']:.0f} batches with probability "
+                f"{a['run_length_probability']:g} over the reference rows (median "
+                f"{a['median_in_control_run_length']:.0f}; {exact:.0f} if the source "
+                "prevalence were exact)"
+            )
+        else:
+            lines.append(
+                f"  false alarms          in control it sounds about once every {exact:.0f} "
+                "batches (the source prevalence taken as exact)"
+            )
+        for note in a["warnings"]:
+            lines.append(f"  note: {note}")
     return "\n".join(lines)
 
 
@@ -188,7 +208,8 @@ def _run(args: argparse.Namespace) -> int:
                     out["alarm"] = batch_alarm_json(
                         out["batches"], out["source_prevalence"],
                         confidence_level=args.confidence, reference=args.alarm_reference,
-                        decision_interval=args.alarm_decision_interval)
+                        decision_interval=args.alarm_decision_interval,
+                        labelled_rows=float(out.get("n_reference_rows", np.inf)))
             except (ValueError, FloatingPointError, ZeroDivisionError) as exc:
                 raise DataError(
                     f"{args.unlabelled}: the prevalence cannot be estimated ({exc})"
@@ -280,8 +301,9 @@ def register(subparsers: Any) -> None:
                        batched=args.batch_size is not None or args.batch_column is not None,
                        batches="--batch-size or --batch-column")
         if (args.batch_size is not None or args.batch_column is not None) and not args.resamples:
-            parser.error("--batch-size and --batch-column need --resamples > 0 (the alarm reads "
-                         "each batch's standard error from its interval)")
+            parser.error("--batch-size and --batch-column need --resamples > 0 (each batch's "
+                         "table shows its interval, and the alarm judges from the intervals how "
+                         "fast it can detect a shift)")
         return _run(args)
 
     parser.set_defaults(func=run)

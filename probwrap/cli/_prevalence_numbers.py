@@ -143,45 +143,68 @@ def batch_alarm_json(
     confidence_level: float = 0.95,
     reference: float = 0.5,
     decision_interval: float = 5.0,
+    labelled_rows: float = np.inf,
 ) -> dict[str, Any]:
-    """The prevalence alarm of per-batch estimates (each with an ``interval``), as JSON values.
+    """The prevalence alarm of per-batch results, as JSON values.
+
+    Each batch is standardised by its own shift test: the signed root of its statistic (on the
+    chi-square scale, 1 df), positive where the batch's prevalence lies above the source one
+    (:func:`probwrap.shift.signed_shift_scores`). ``labelled_rows``: the reference rows every
+    batch is compared with (``np.inf`` for a source prevalence taken as exact); the quoted
+    in-control run length is the one reached with probability 0.9 over their draw
+    (:func:`probwrap.shift.baseline_error_run_length`). The intervals only serve the estimate
+    of how fast the chart detects a shift.
 
     Examples
     --------
-    >>> rows = [{"batch": str(i), "prevalence": v, "interval": [v - 0.0078, v + 0.0078]}
-    ...         for i, v in enumerate([0.040, 0.043, 0.038, 0.041, 0.052, 0.055, 0.051, 0.054])]
+    >>> rows = [{"batch": str(i), "n_rows": 100, "prevalence": v, "shift_statistic": s,
+    ...          "interval": [v - 0.0078, v + 0.0078]}
+    ...         for i, (v, s) in enumerate([(0.040, 0.0), (0.043, 0.6), (0.038, 0.3),
+    ...                                     (0.041, 0.1), (0.052, 9.0), (0.055, 13.0),
+    ...                                     (0.051, 8.0), (0.054, 12.0)])]
     >>> out = batch_alarm_json(rows, 0.040)
-    >>> out["first_alarm"], [a["batch"] for a in out["alarms"]]
-    ('5', ['5', '7'])
+    >>> out["first_alarm"], [a["batch"] for a in out["alarms"]], round(out["in_control_run_length"])
+    ('5', ['5', '7'], 465)
     """
     from scipy.stats import norm
 
-    from probwrap.shift import cusum_alarms, cusum_run_length
+    from probwrap.report._alarm_chart import alarm_on_scores
 
-    if any(b["interval"] is None for b in batches):
-        raise ValueError("the prevalence alarm needs an interval per batch (--resamples > 0)")
-    width = np.array([b["interval"][1] - b["interval"][0] for b in batches], dtype=float)
-    if not np.all(width > 0):
-        raise ValueError("a batch's prevalence interval has zero width, so the alarm has no "
-                         "standard error to work with (give larger batches)")
-    se = width / (2.0 * norm.ppf(0.5 + confidence_level / 2.0))
+    stat = np.array([b["shift_statistic"] for b in batches], dtype=float)
     prev = np.array([b["prevalence"] for b in batches], dtype=float)
-    res = cusum_alarms(prev, float(source_prevalence), se, reference=reference,
-                       decision_interval=decision_interval)
+    if not np.all(np.isfinite(stat)):
+        raise ValueError("a batch's shift statistic is not finite, so the alarm cannot "
+                         "standardise it")
+    z = np.sign(prev - float(source_prevalence)) * np.sqrt(np.maximum(stat, 0.0))
+    se = None
+    if all(b.get("interval") is not None for b in batches):
+        width = np.array([b["interval"][1] - b["interval"][0] for b in batches], dtype=float)
+        if np.all(width > 0):
+            se = width / (2.0 * norm.ppf(0.5 + confidence_level / 2.0))
     labels = [b["batch"] for b in batches]
+    a = alarm_on_scores(z, labels, np.array([b.get("n_rows", 1) for b in batches], dtype=float),
+                        labelled_rows=labelled_rows, baseline=float(source_prevalence),
+                        standard_error=se, reference=reference,
+                        decision_interval=decision_interval)
+    res = a.result
     alarms = [{"batch": labels[i], "index": int(i), "direction": "up" if d > 0 else "down"}
               for i, d in zip(res.alarms.tolist(), res.direction.tolist(), strict=True)]
     return {
         "reference": res.reference,
         "decision_interval": res.decision_interval,
-        "standard_error": se.tolist(),
+        "standardized": z.tolist(),
         "upper": res.upper.tolist(),
         "lower": res.lower.tolist(),
         "alarms": alarms,
         "first_alarm": alarms[0]["batch"] if alarms else None,
-        "in_control_run_length": cusum_run_length(
-            0.0, reference=res.reference, decision_interval=res.decision_interval,
-            two_sided=True),
+        "in_control_run_length": a.in_control_run_length,
+        "run_length_probability": a.run_length_probability,
+        "median_in_control_run_length": a.median_run_length,
+        "exact_baseline_run_length": a.exact_baseline_run_length,
+        "labelled_share": a.labelled_share,
+        "assured_decision_interval": a.assured_decision_interval,
+        "batches_to_detect": a.batches_to_detect,
+        "warnings": list(a.warnings),
     }
 
 

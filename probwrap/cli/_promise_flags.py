@@ -256,6 +256,14 @@ def promise_summary(content, summary: dict) -> str:
                        for j, i in enumerate(res.alarms)],
             "first_alarm": None if a.first_batch is None else plain(a.first_batch),
             "in_control_run_length": float(a.in_control_run_length),
+            "run_length_probability": float(a.run_length_probability),
+            "median_in_control_run_length": float(a.median_run_length),
+            "exact_baseline_run_length": float(a.exact_baseline_run_length),
+            "labelled_share": float(a.labelled_share),
+            "assured_decision_interval": float(a.assured_decision_interval),
+            "batches_to_detect": None if a.batches_to_detect is None
+            else float(a.batches_to_detect),
+            "warnings": list(a.warnings),
         }
         line += (", no prevalence alarm" if a.first_batch is None else
                  f", prevalence alarm after batch {a.first_batch}")

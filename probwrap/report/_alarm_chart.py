@@ -1,30 +1,50 @@
-"""The prevalence alarm of the report: a two-sided CUSUM on the per-batch estimates, and its chart.
+"""The prevalence alarm of the report: a two-sided CUSUM on the per-batch shift tests, and its chart.
 
-The batch estimates of :func:`probwrap.shift.prior_by_batch` are standardised against the source
-(labelled) prevalence with the standard error read from each batch's interval,
-``se = (upper - lower) / (2 z)`` with ``z`` the normal quantile of the interval's level (as
-docs/prevalence_alarms.md recommends), and fed to :func:`probwrap.shift.cusum_alarms` with its
-defaults: reference value ``k = 0.5`` standard errors (tuned to a one-standard-error shift) and
-decision interval ``h = 5`` (in-control average run length about 465 batches, from
-:func:`probwrap.shift.cusum_run_length`).
+Each batch of :func:`probwrap.shift.prior_by_batch` is standardised by its own two-sample shift
+test, the signed root of its statistic (:func:`probwrap.shift.signed_shift_scores`): in control
+roughly a standard normal at every batch size. (The earlier recipe, the estimate shrunk toward
+the source prevalence over the standard error of the unshrunk one, spread with a standard
+deviation of 0.2-0.4 in batches of 5-20 rows and could not sound.) The CUSUM is
+:func:`probwrap.shift.cusum_alarms` with reference value ``k = 0.5`` and decision interval
+``h = 5``. Every batch is compared with the same labelled rows, whose error is shared: the run
+length quoted is the one reached with probability 0.9 over the draw of those rows
+(:func:`probwrap.shift.baseline_error_run_length`), 465 batches only when they are many next to a
+batch.
 """
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
 from scipy.stats import norm
 
 from ..plot._style import PALETTE
-from ..shift import CusumResult, cusum_alarms, cusum_run_length
+from ..shift import (
+    CusumResult,
+    baseline_error_run_length,
+    cusum_alarms,
+    cusum_run_length,
+    decision_interval_for_run_length,
+    labelled_share_of_variance,
+    signed_shift_scores,
+)
 from ._svg_charts import Chart
 
-__all__ = ["BatchAlarm", "batch_alarm", "alarm_svg", "ALARM_REFERENCE", "ALARM_INTERVAL"]
+__all__ = ["BatchAlarm", "batch_alarm", "alarm_on_scores", "alarm_svg", "ALARM_REFERENCE",
+           "ALARM_INTERVAL", "RUN_LENGTH_PROBABILITY", "SHARED_ERROR_LIMIT", "SLOW_DETECTION"]
 
 #: the report's reference value k and decision interval h (the defaults of cusum_alarms)
 ALARM_REFERENCE = 0.5
 ALARM_INTERVAL = 5.0
+#: the quoted in-control run length is reached with this probability over the labelled rows
+RUN_LENGTH_PROBABILITY = 0.9
+#: above this share of the variance from the labelled rows, warn (rule of thumb)
+SHARED_ERROR_LIMIT = 0.1
+#: warn when a halving or a 1.5-fold rise of the rarer class takes more batches than this
+#: to detect on average (rule of thumb)
+SLOW_DETECTION = 20.0
 
 
 @dataclass(frozen=True)
@@ -39,13 +59,108 @@ class BatchAlarm:
     first_batch : str or None
         Label of the batch after which the first alarm fired (``None``: no alarm).
     in_control_run_length : float
-        Two-sided in-control average run length for this ``k`` and ``h`` (Brook & Evans 1972).
+        Two-sided in-control average run length reached with probability
+        ``run_length_probability`` over the draw of the labelled rows (equal to the classic
+        value of Brook & Evans 1972 when the baseline is exact).
+    exact_baseline_run_length : float
+        The in-control average run length if the baseline were exact (465 for k=0.5, h=5).
+    median_run_length : float
+        Median over the labelled rows of the in-control average run length.
+    labelled_share : float
+        Median over batches of the labelled rows' share of the variance.
+    run_length_probability : float
+    assured_decision_interval : float
+        The ``h`` that would keep the in-control run length at least ``exact_baseline_run_length``
+        with ``run_length_probability``.
+    batches_to_detect : float or None
+        Average batches to an alarm after the rarer class's share moves by half of itself (from
+        the median standard error of the batch estimates; None without intervals).
+    warnings : list of str
     """
 
     result: CusumResult
     batches: list[str]
     first_batch: str | None
     in_control_run_length: float
+    exact_baseline_run_length: float = float("nan")
+    median_run_length: float = float("nan")
+    labelled_share: float = 0.0
+    run_length_probability: float = RUN_LENGTH_PROBABILITY
+    assured_decision_interval: float = ALARM_INTERVAL
+    batches_to_detect: float | None = None
+    warnings: tuple[str, ...] = ()
+
+
+def alarm_on_scores(
+    scores: np.ndarray,
+    labels: list[str],
+    n_rows: np.ndarray,
+    *,
+    labelled_rows: float = np.inf,
+    baseline: float | None = None,
+    standard_error: np.ndarray | None = None,
+    reference: float = ALARM_REFERENCE,
+    decision_interval: float = ALARM_INTERVAL,
+    probability: float = RUN_LENGTH_PROBABILITY,
+) -> BatchAlarm:
+    """The CUSUM on standardised batch shifts, with the run length given the labelled rows'
+    error and warnings where it is shared or where the batches are too small to detect a shift
+    (:data:`SHARED_ERROR_LIMIT`, :data:`SLOW_DETECTION`; rules of thumb) in ``warnings``
+    (:func:`batch_alarm` also raises them as :class:`UserWarning`).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> a = alarm_on_scores(np.zeros(8), [str(i) for i in range(8)], np.full(8, 100),
+    ...                     labelled_rows=5000)
+    >>> a.first_batch is None, round(a.exact_baseline_run_length), a.warnings
+    (True, 465, ())
+    """
+    res = cusum_alarms(np.asarray(scores, dtype=float), 0.0, 1.0, reference=reference,
+                       decision_interval=decision_interval)
+    share = float(np.median(labelled_share_of_variance(n_rows, labelled_rows)))
+    share = min(share, 0.999)
+    runs = baseline_error_run_length(share, reference=res.reference,
+                                     decision_interval=res.decision_interval,
+                                     probability=probability)
+    notes = []
+    assured_h = res.decision_interval
+    if share > SHARED_ERROR_LIMIT:
+        assured_h = decision_interval_for_run_length(runs.exact_baseline, labelled_share=share,
+                                                     probability=probability,
+                                                     reference=res.reference)
+        notes.append(
+            f"every batch is compared with the same labelled rows, whose error takes "
+            f"{share:.0%} of each batch's variance (more than {SHARED_ERROR_LIMIT:.0%}, a rule "
+            f"of thumb): the chart's in-control run length is not {runs.exact_baseline:.0f} "
+            f"batches but, with probability {probability:g} over the labelled rows, at least "
+            f"{runs.assured:.0f} (median {runs.median:.0f}); h = {assured_h:.3g} would keep it "
+            f"at least {runs.exact_baseline:.0f} with that probability. Label more rows or use "
+            "smaller batches."
+        )
+    detect = None
+    if standard_error is not None and baseline is not None and 0.0 < baseline < 1.0:
+        se = np.asarray(standard_error, dtype=float)
+        if np.all(np.isfinite(se)) and np.all(se > 0):
+            move = 0.5 * min(baseline, 1.0 - baseline)
+            detect = cusum_run_length(move / float(np.median(se)), reference=res.reference,
+                                      decision_interval=res.decision_interval, two_sided=True)
+            if detect > SLOW_DETECTION:
+                rows = float(np.median(np.asarray(n_rows, dtype=float))) * detect
+                notes.append(
+                    f"the batches are small for the chart: a move of the prevalence by "
+                    f"{move:.3g} (half the rarer class's share) takes about {detect:.0f} "
+                    f"batches (about {rows:.0f} rows) to sound on average (more than "
+                    f"{SLOW_DETECTION:.0f} batches, a rule of thumb); within a few batches "
+                    "it catches only larger moves."
+                )
+    first = labels[int(res.alarms[0])] if res.alarms.size else None
+    return BatchAlarm(
+        result=res, batches=list(labels), first_batch=first,
+        in_control_run_length=runs.assured, exact_baseline_run_length=runs.exact_baseline,
+        median_run_length=runs.median, labelled_share=share, run_length_probability=probability,
+        assured_decision_interval=assured_h, batches_to_detect=detect, warnings=tuple(notes),
+    )
 
 
 def batch_alarm(
@@ -56,14 +171,16 @@ def batch_alarm(
     class_index: int = 1,
     reference: float = ALARM_REFERENCE,
     decision_interval: float = ALARM_INTERVAL,
+    labelled_rows: float = np.inf,
 ) -> BatchAlarm:
-    """Run the two-sided CUSUM on the prevalence column of a :func:`prior_by_batch` table.
+    """Run the two-sided CUSUM on the batch shift tests of a :func:`prior_by_batch` table.
 
-    Raises ``ValueError`` when a batch's interval has zero width (no standard error to
-    standardise with, e.g. ``n_resamples=0``).
+    ``labelled_rows``: the effective labelled rows the baseline comes from (``np.inf``: taken
+    as exact). The intervals only serve the estimate of how fast the chart detects a shift.
 
     Examples
     --------
+    >>> import warnings
     >>> import numpy as np
     >>> from probwrap.shift import PriorEstimator, prior_by_batch
     >>> rng = np.random.default_rng(0)
@@ -72,27 +189,23 @@ def batch_alarm(
     >>> est = PriorEstimator(n_resamples=30, random_state=0).fit(
     ...     np.column_stack([1 - p1[:300], p1[:300]]), y[:300])
     >>> table = prior_by_batch(est, np.column_stack([1 - p1[300:], p1[300:]]), batch_size=100)
-    >>> alarm = batch_alarm(table, float(est.source_prior_[1]))
-    >>> alarm.first_batch is None, round(alarm.in_control_run_length)
-    (True, 465)
+    >>> with warnings.catch_warnings(record=True) as caught:  # 300 labelled, 100 per batch
+    ...     alarm = batch_alarm(table, float(est.source_prior_[1]), labelled_rows=300)
+    >>> alarm.first_batch is None, round(alarm.labelled_share, 2), round(alarm.in_control_run_length)
+    (True, 0.25, 15)
     """
-    prev = np.asarray(table["prior"][:, class_index], dtype=float)
+    z = signed_shift_scores(table, float(baseline), class_index=class_index)
     width = np.asarray(table["upper"][:, class_index] - table["lower"][:, class_index],
                        dtype=float)
-    if not np.all(width > 0):
-        bad = [str(b) for b in np.asarray(table["batch"])[~(width > 0)]]
-        raise ValueError(
-            f"the prevalence interval of batch(es) {', '.join(bad[:5])} has zero width, so "
-            "there is no standard error to standardise the CUSUM with (give n_resamples > 0)."
-        )
-    se = width / (2.0 * norm.ppf(0.5 + confidence_level / 2.0))
-    res = cusum_alarms(prev, float(baseline), se, reference=reference,
-                       decision_interval=decision_interval)
+    se = width / (2.0 * norm.ppf(0.5 + confidence_level / 2.0)) if np.all(width > 0) else None
     labels = [str(b) for b in np.asarray(table["batch"]).tolist()]
-    first = labels[int(res.alarms[0])] if res.alarms.size else None
-    arl = cusum_run_length(0.0, reference=reference, decision_interval=decision_interval,
-                           two_sided=True)
-    return BatchAlarm(result=res, batches=labels, first_batch=first, in_control_run_length=arl)
+    alarm = alarm_on_scores(z, labels, np.asarray(table["n_rows"], dtype=float),
+                            labelled_rows=labelled_rows, baseline=float(baseline),
+                            standard_error=se, reference=reference,
+                            decision_interval=decision_interval)
+    for note in alarm.warnings:
+        warnings.warn(note[0].upper() + note[1:], UserWarning, stacklevel=2)
+    return alarm
 
 
 def alarm_svg(alarm: BatchAlarm, *, key: str = "alarm") -> str:
@@ -118,8 +231,8 @@ def alarm_svg(alarm: BatchAlarm, *, key: str = "alarm") -> str:
     top = max(h * 1.25, float(np.max(np.concatenate([res.upper, res.lower]))) * 1.08)
     step = max(1, int(np.ceil(n / 12)))  # at most about 12 batch labels
     chart = Chart(key, title="Prevalence alarm (CUSUM)", width=560, height=320,
-                  description="Upward and downward CUSUM statistics of the batch prevalence "
-                  "estimates, in standard errors, against the decision interval; ringed "
+                  description="Upward and downward CUSUM statistics of the batch shift "
+                  "tests, in standard deviations, against the decision interval; ringed "
                   "batches are where an alarm fired.")
     panel = chart.add_panel(xlim=(-0.5, max(n - 0.5, 0.5)), ylim=(0.0, top), xlabel="batch",
                             ylabel="CUSUM (standard errors)", xticks=x[::step],

@@ -408,6 +408,7 @@ def collect_content(
     if unlabelled_prob is not None:
         q = as_positive_proba(unlabelled_prob, "unlabelled_prob")
         content.n_unlabelled = int(q.shape[0])
+    est = None
     if prior_shift is not None and hasattr(prior_shift, "target_prior_"):
         content.source_prevalence = float(prior_shift.source_prior_[1])
         content.target_prevalence = float(prior_shift.target_prior_[1])
@@ -451,13 +452,18 @@ def collect_content(
     if content.batch_table is not None and content.source_prevalence is not None:
         from ._alarm_chart import batch_alarm
 
+        # the labelled rows every batch is compared with: their error is shared by the batches
+        fitted = prior_shift.prior_estimator_ if (
+            prior_shift is not None and hasattr(prior_shift, "prior_estimator_")) else est
+        labelled_rows = getattr(fitted, "n_source_effective_", None) or np.inf
+
         settings = {k: v for k, v in (("reference", alarm_reference),
                                       ("decision_interval", alarm_decision_interval))
                     if v is not None}
         content.alarm = notes.compute(
             "batches", "prevalence alarm", batch_alarm, content.batch_table,
             content.source_prevalence, confidence_level=confidence_level,
-            expected=(ValueError,), **settings)
+            labelled_rows=float(labelled_rows), expected=(ValueError,), **settings)
     E = None
     if content.applied_prevalence is not None and content.chosen_cutoff is not None:
         # moved as the wrapper moves its predictions: to the prevalence its evidence gate

@@ -326,8 +326,9 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
             if "alarm" in figures:
                 parts.append(_figure(
                     "fig-alarm", figures["alarm"],
-                    "Two-sided CUSUM of the batch prevalence estimates, in standard errors "
-                    f"against the source prevalence (k = {c.alarm.result.reference:g}); an "
+                    "Two-sided CUSUM of the batch shift tests (each the signed root of its "
+                    "statistic, a standard normal when nothing moved) against the source "
+                    f"prevalence (k = {c.alarm.result.reference:g}); an "
                     "alarm fires when a sum crosses the dashed decision interval "
                     f"h = {c.alarm.result.decision_interval:g} and both sums restart.",
                     figure_notes(c, "alarm"),
@@ -354,12 +355,18 @@ def _alarm_text(c: Any) -> str:
         f'<p class="pw-alarm" data-first-alarm="{_text(a.first_batch or "")}" '
         f'data-n-alarms="{res.alarms.size}">'
         f"Prevalence alarm (two-sided CUSUM, Page 1954; reference value k = "
-        f"{res.reference:g} and decision interval h = {res.decision_interval:g} standard "
-        "errors, the standard error of each batch read from its interval): "
-        f"{verdict} When nothing has moved the chart sounds falsely about once every "
-        f'<span data-value="{a.in_control_run_length!r}">{a.in_control_run_length:.0f}</span> '
-        "batches (in-control average run length, Brook &amp; Evans 1972). An alarm says the "
-        "estimates drifted, not why; check a labelled sample before acting.</p>"
+        f"{res.reference:g} and decision interval h = {res.decision_interval:g}, on each "
+        "batch's shift test standardised to a standard normal when nothing moved): "
+        f"{verdict} When nothing has moved, the chart sounds falsely on average not sooner "
+        f'than every <span data-value="{a.in_control_run_length!r}">'
+        f"{a.in_control_run_length:.0f}</span> batches with probability "
+        f"{a.run_length_probability:g} over the labelled rows every batch is compared with "
+        f"(median {a.median_run_length:.0f}; {a.exact_baseline_run_length:.0f} if the "
+        "source prevalence were exact; in-control average run length given the labelled "
+        "rows, Brook &amp; Evans 1972). "
+        + "".join(f"Note: {_text(w)} " for w in a.warnings)
+        + "An alarm says the estimates drifted, not why; check a labelled sample before "
+        "acting.</p>"
     )
 
 

@@ -5,7 +5,16 @@ about scikit-learn estimators. :class:`probwrap.PriorShiftWrapper` is the estima
 """
 
 from ._adjust import adjust_to_prior, check_prior, project_to_simplex, shift_cutoff
-from ._alarms import CusumResult, cusum_alarms, cusum_run_length
+from ._alarms import (
+    BaselineErrorRunLength,
+    CusumResult,
+    baseline_error_run_length,
+    cusum_alarms,
+    cusum_run_length,
+    decision_interval_for_run_length,
+    labelled_share_of_variance,
+    signed_shift_scores,
+)
 from ._batch_cost import expected_cost_by_batch
 from ._by_batch import prior_by_batch
 from ._calibration import BiasCorrectedScaling
@@ -33,6 +42,11 @@ __all__ = [
     "CusumResult",
     "cusum_alarms",
     "cusum_run_length",
+    "BaselineErrorRunLength",
+    "baseline_error_run_length",
+    "decision_interval_for_run_length",
+    "labelled_share_of_variance",
+    "signed_shift_scores",
     "INTERVALS",
     "PriorNotIdentifiedWarning",
     "bca_interval",
