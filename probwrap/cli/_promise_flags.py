@@ -167,13 +167,15 @@ def add_alarm_flags(parser: argparse.ArgumentParser) -> None:
     when not given: :func:`alarm_settings` checks them and puts in the defaults)."""
     parser.add_argument(
         "--alarm-reference", type=_nonnegative, default=None, metavar="K",
-        help="reference value k of the alarm, in standard errors: half the shift it should "
-        "catch fastest (default 0.5)",
+        help="reference value k of the alarm, in standard deviations of the batches' "
+        "standardised shift tests: half the shift it should catch fastest (default 0.5)",
     )
     parser.add_argument(
         "--alarm-decision-interval", type=_positive, default=None, metavar="H",
-        help="decision interval h of the alarm, in standard errors: larger means fewer false "
-        "alarms and slower detection (default 5: about one false alarm in 465 batches)",
+        help="decision interval h of the alarm, in the same units: larger means fewer false "
+        "alarms and slower detection (default 5: about one false alarm in 465 batches when "
+        "the source prevalence is exact, far fewer batches when it was estimated from few "
+        "labelled rows; the output says how many)",
     )
 
 

@@ -135,12 +135,14 @@ def write_report(
         Supplies the source and estimated target prevalence, interval and shift test instead.
     batch_size : int, optional
         Also estimate the prevalence per batch of this many unlabelled rows and draw it, with
-        a prevalence alarm: a two-sided CUSUM of the batch estimates against the source
-        prevalence (:func:`probwrap.shift.cusum_alarms`, k = 0.5, h = 5; see
-        docs/prevalence_alarms.md).
+        a prevalence alarm: a two-sided CUSUM of the batches' shift tests against the source
+        prevalence (:func:`probwrap.shift.signed_shift_scores`,
+        :func:`probwrap.shift.cusum_alarms`, k = 0.5, h = 5; see docs/prevalence_alarms.md).
     alarm_reference, alarm_decision_interval : float, optional
-        The alarm's reference value k and decision interval h, in standard errors (defaults
-        0.5 and 5: about one false alarm in 465 in-control batches).
+        The alarm's reference value k and decision interval h, in standard deviations of the
+        standardised batch shifts (defaults 0.5 and 5: about one false alarm in 465 in-control
+        batches with an exact baseline; the report quotes the run length given the labelled
+        rows, :func:`probwrap.shift.baseline_error_run_length`).
     n_bins : int, default=10
         Bins of the reliability diagram and the calibration error.
     n_resamples : int, default=200

@@ -85,8 +85,12 @@ def cusum_alarms(
     :math:`h` sets the false-alarm rate. The defaults ``k = 0.5, h = 5`` (tuned to a one-standard-
     error shift; common practice) give the two-sided chart an in-control average run length of
     about 465 batches and 10.4 batches for a one-standard-error shift (compute others with
-    :func:`cusum_run_length`). The standardisation assumes the batch estimates are independent
-    and roughly normal with the given standard errors.
+    :func:`cusum_run_length`) when the baseline is exact. A baseline estimated from labelled
+    rows that every batch is compared with makes the batches share its error; the run length
+    is then much shorter and variable (:func:`baseline_error_run_length`). The standardisation
+    assumes the batch estimates are roughly normal with the given standard errors; for the
+    batches of :func:`prior_by_batch` chart :func:`signed_shift_scores` with ``baseline=0`` and
+    ``standard_error=1``.
 
     Parameters
     ----------
