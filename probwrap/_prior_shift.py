@@ -209,7 +209,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         Priors estimated by the last ``adapt`` (set by ``adapt`` only).
     target_prior_interval_ : ndarray of shape (n_classes, 2) or None
         Interval of the class priors of the ``adapt`` rows, carrying the error of both the
-        unlabelled and the labelled rows (set by ``adapt``; see ``interval``).
+        unlabelled and the labelled rows (set by ``adapt``; see ``interval``). With more than
+        two classes, an interval that excludes ``source_prior_`` while the shift test does not
+        reject at its level is widened to reach it, with a
+        :class:`~probwrap.shift.PriorIntervalConflictWarning` (EM's estimate then moved
+        further than the rows support; see docs/prior_shift.md).
     shift_pvalue_ : float
         p-value of the two-sample score test of "no shift" (the ``adapt`` rows against the
         labelled rows, whose class shares and calibration are themselves estimates; F

@@ -481,6 +481,10 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         # the one-step estimate the harm bound assumes (J = the weighted mean of u u')
         harm_scale *= estimate_amplification((ml - src)[1:], suu / total, test.mean_cov,
                                              test.raw)
+    if interval is not None:
+        # as in memory: an interval that excludes the source shares while the test does not
+        # reject is widened to reach them (PriorIntervalConflictWarning)
+        interval, ml_interval = est._reconcile(np.asarray(interval), ml_interval, pvalue)
     return PriorEstimate(
         prior=prior,
         method=method,

@@ -24,6 +24,7 @@ from ._estimate import (
     BoundaryPriorWarning,
     FewLabelledRowsWarning,
     PriorEstimate,
+    PriorIntervalConflictWarning,
     PriorNotIdentifiedWarning,
     em_prior,
     prior_log_likelihood,
@@ -35,6 +36,7 @@ from ._shift_tests import ShiftTestResult, shift_score_test, shift_test
 __all__ = [
     "BiasCorrectedScaling",
     "BoundaryPriorWarning",
+    "PriorIntervalConflictWarning",
     "FewLabelledRowsWarning",
     "CALIBRATIONS",
     "ChangePointResult",

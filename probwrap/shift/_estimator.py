@@ -22,6 +22,7 @@ from ._estimate import (
     BoundaryPriorWarning,
     FewLabelledRowsWarning,
     PriorEstimate,
+    PriorIntervalConflictWarning,
     _solve_prior,
     _warn_empty_columns,
     check_class_names,
@@ -527,6 +528,8 @@ class PriorEstimator(_Resampling):
                 if ml is not None:
                     ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
+        if k > 2 and bounds is not None and point.identified:
+            bounds, ml_bounds = self._reconcile(bounds, ml_bounds, pvalue)
         return PriorEstimate(
             prior=point.prior,
             method=point.method,
@@ -543,6 +546,42 @@ class PriorEstimator(_Resampling):
             null_harm_scale=harm_scale,
             ml_interval=ml_bounds,
         )
+
+    def _reconcile(self, bounds: np.ndarray, ml_bounds: np.ndarray | None,
+                   pvalue: float | None) -> tuple[np.ndarray, np.ndarray | None]:
+        """More than two classes: widen an interval that excludes the source prior while the
+        shift test does not reject "no shift" at the interval's level, so that it reaches the
+        source prior, and warn (:class:`PriorIntervalConflictWarning`).
+
+        Both read the same rows; the score test holds its level where EM's delta-method
+        interval does not (EM amplifies small calibration errors on new rows), so the widened
+        interval covers the unchanged shares whenever the test accepts them.
+        """
+        src = self.source_prior_
+        alpha = 1.0 - float(self.confidence_level)
+        if pvalue is None or not np.isfinite(pvalue) or pvalue <= alpha:
+            return bounds, ml_bounds
+        out = np.flatnonzero((src < bounds[:, 0] - 1e-12) | (src > bounds[:, 1] + 1e-12))
+        if out.size == 0:
+            return bounds, ml_bounds
+        listed = ", ".join(
+            f"{name_classes(int(c), self._names())} [{bounds[c, 0]:.3g}, {bounds[c, 1]:.3g}] "
+            f"against {src[c]:.3g}" for c in out[:4])
+        widened = np.column_stack([np.minimum(bounds[:, 0], src), np.maximum(bounds[:, 1], src)])
+        if ml_bounds is not None:
+            ml_bounds = np.column_stack([np.minimum(ml_bounds[:, 0], src),
+                                         np.maximum(ml_bounds[:, 1], src)])
+        warnings.warn(
+            f"The {self.confidence_level:.0%} interval of EM's estimate excluded the source "
+            f"share of {listed}, but the shift test finds no evidence of a shift (p = "
+            f"{pvalue:.2g} > {alpha:.2g}): EM's estimate moved further than the rows support "
+            f"(the calibration fitted on {self.n_source_effective_:.4g} effective labelled "
+            "rows errs slightly on new rows, and EM amplifies that). The interval was widened "
+            "to reach the source shares; read the estimate as unreliable, or label more rows.",
+            PriorIntervalConflictWarning,
+            stacklevel=3,
+        )
+        return widened, ml_bounds
 
     def _warn_few_labelled(self, n_src: float | None) -> None:
         """Warn when the interval rests on fewer than ``FEW_LABELLED_ROWS`` effective labelled
