@@ -341,14 +341,17 @@ def run_task(ti, spec, seed=0, only_model=None, only_kind=None, only_ncal=None):
     return rows
 
 
-def append(path, rows):
+def append(path, rows, columns=None):
+    """Append result rows to the CSV file ``path`` (header first when new); ``columns`` default
+    to this sweep's (the multiclass sweep passes its own)."""
+    columns = COLUMNS if columns is None else columns
     new = not path.exists()
     with open(path, "a", newline="") as f:
-        w = csv.DictWriter(f, fieldnames=COLUMNS, extrasaction="raise")
+        w = csv.DictWriter(f, fieldnames=columns, extrasaction="raise")
         if new:
             w.writeheader()
         for r in rows:
-            w.writerow({k: r.get(k, "") for k in COLUMNS})
+            w.writerow({k: r.get(k, "") for k in columns})
 
 
 def main():

@@ -40,11 +40,9 @@ from __future__ import annotations
 
 import argparse
 import copy
-import csv
 import json
 import sys
 import time
-import traceback
 import warnings
 from pathlib import Path
 
@@ -65,6 +63,8 @@ from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
 HERE = Path(__file__).parent
 sys.path.insert(0, str(HERE))
 import unpicked_data as T  # noqa: E402
+import unpicked_data_sweep as B  # noqa: E402
+from unpicked_data_sweep import Recorder, tb_tail  # noqa: E402
 
 SIZES = (60, 150, 400)
 SEEDS = (0, 1)
@@ -133,33 +133,6 @@ def reweight(P, src, q):
     return W / W.sum(axis=1, keepdims=True)
 
 
-class Recorder:
-    """Collect the classes of the warnings raised inside a block (all categories, always)."""
-
-    def __enter__(self):
-        self._cm = warnings.catch_warnings(record=True)
-        self.log = self._cm.__enter__()
-        warnings.simplefilter("always")
-        return self
-
-    def __exit__(self, *exc):
-        self._cm.__exit__(*exc)
-        return False
-
-    def cats(self):
-        out = []
-        for w in self.log:
-            c = w.category.__name__
-            if c not in out:
-                out.append(c)
-        return ";".join(out)
-
-
-def tb_tail():
-    lines = traceback.format_exc().strip().splitlines()
-    return " / ".join(line.strip() for line in lines[-3:])[:400]
-
-
 def draw(pool, y, n, seed):
     """n training and n held-out rows (stratified) from the pool, or None + reason."""
     if len(pool) < 2 * n:
@@ -209,7 +182,7 @@ def cell(m0, m, X, y, tr, ho, Xte, yte, k, seed, task):
                 r["ll_pw"] = ll(yte, P, k)
         except Exception:  # noqa: BLE001
             err.append("[fz] " + tb_tail())
-    r["warn_fz"] = rec.cats()
+    r["warn_fz"] = rec.summary()[0]
     P_sig = None
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -235,7 +208,7 @@ def cell(m0, m, X, y, tr, ho, Xte, yte, k, seed, task):
                 r["ll_cf"] = ll(yte, P, k)
         except Exception:  # noqa: BLE001
             err.append("[cf] " + tb_tail())
-    r["warn_cf"] = rec.cats()
+    r["warn_cf"] = rec.summary()[0]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         try:
@@ -262,7 +235,7 @@ def cell(m0, m, X, y, tr, ho, Xte, yte, k, seed, task):
                 r[key] = cost_per_row(C, yte, np.searchsorted(labels, pred))
             except Exception:  # noqa: BLE001
                 err.append(f"[cost {key}] " + tb_tail())
-    r["warn_cost"] = rec.cats()
+    r["warn_cost"] = rec.summary()[0]
 
     # -- prior shift ---------------------------------------------------------------------------
     rng = np.random.default_rng([seed, task, 7])
@@ -275,7 +248,7 @@ def cell(m0, m, X, y, tr, ho, Xte, yte, k, seed, task):
             before = ps.predict_proba(Xte)
         except Exception:  # noqa: BLE001
             err.append("[prior fit] " + tb_tail())
-    fit_warn = rec.cats()
+    fit_warn = rec.summary()[0]
     if ps is not None:
         variants = {"none": (np.arange(len(yte)), np.bincount(yte, minlength=k) / len(yte))}
         variants["up"] = shifted(yte, cls, 2.0, rng)
@@ -299,7 +272,7 @@ def cell(m0, m, X, y, tr, ho, Xte, yte, k, seed, task):
                     r[f"cover_{name}"] = bool(np.all((iv[:, 0] <= q + 1e-9) & (q - 1e-9 <= iv[:, 1])))
                 except Exception:  # noqa: BLE001
                     err.append(f"[prior {name}] " + tb_tail())
-            cats = ";".join(c for c in dict.fromkeys((fit_warn + ";" + rec.cats()).split(";")) if c)
+            cats = ";".join(c for c in dict.fromkeys((fit_warn + ";" + rec.summary()[0]).split(";")) if c)
             r[f"warn_p{name}"] = cats
         r["prior_exact01"] = any01
     r["error"] = " || ".join(err)
@@ -345,16 +318,6 @@ def run_task(ti, spec, seeds=SEEDS, only_model=None, only_n=None):
     return rows
 
 
-def append(path, rows):
-    new = not path.exists()
-    with open(path, "a", newline="") as f:
-        w = csv.DictWriter(f, fieldnames=COLUMNS, extrasaction="raise")
-        if new:
-            w.writeheader()
-        for r in rows:
-            w.writerow({c: r.get(c, "") for c in COLUMNS})
-
-
 def task_sample(out: Path, n_tasks: int):
     """The seeded sample of tasks, kept beside --out (enumerating reads every data frame)."""
     cache = out.with_suffix(".tasks.json")
@@ -386,7 +349,7 @@ def main():
         ti, model, n = int(a.rerun[0]), a.rerun[1], int(a.rerun[2])
         seeds = [int(v) for v in a.seeds.split(",")]
         rows = run_task(ti, sample[ti], seeds=seeds, only_model=model, only_n=n)
-        append(out, rows)
+        B.append(out, rows, COLUMNS)
         for r in rows:
             print({c: r.get(c) for c in ("seed", "ll_own", "ll_pw", "ll_sig", "ll_iso",
                                          "ll_cf", "ll_cf_sk", "cost_argmax", "cost_bayes_sig",
@@ -406,7 +369,7 @@ def main():
             break
         ts = time.time()
         rows = run_task(ti, spec)
-        append(out, rows)
+        B.append(out, rows, COLUMNS)
         print(f"[{time.time() - t0:6.0f}s, CPU {time.process_time() - c0:4.0f}s] task {ti} {spec['package']}/{spec['item']}:"
               f"{spec['target']} n={spec['n_rows']} k={spec['n_classes']} -> {len(rows)} cells "
               f"in {time.time() - ts:.1f}s", flush=True)
