@@ -81,3 +81,31 @@ def test_bad_input_is_named():
         cusum_alarms([], 0.1, 0.01)
     with pytest.raises(ValueError, match="n_states"):
         cusum_run_length(0.0, n_states=1)
+
+
+def test_batches_of_dates_out_of_order_warn():
+    # scikit-learn's breast-cancer data: a prior-shift estimator fitted on half the rows, the
+    # other half monitored by "week" with the export's rows not sorted by week
+    import warnings
+
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    from probwrap import PriorShiftWrapper
+
+    X, y = load_breast_cancer(return_X_y=True)
+    model = PriorShiftWrapper(make_pipeline(StandardScaler(), LogisticRegression()),
+                              n_resamples=0, random_state=0).fit(X[::2], y[::2])
+    Xn = X[1::2][:280]
+    weeks = np.repeat(np.datetime64("2026-01-05") + np.arange(4) * np.timedelta64(7, "D"), 70)
+    shuffled = weeks[np.r_[70:140, 0:70, 140:280]]
+    with pytest.warns(UserWarning, match="not in increasing order.*2026-01-05"):
+        table = model.monitor(Xn, batches=shuffled)
+    assert table["batch"][0] == np.datetime64("2026-01-12")  # the table follows the rows
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        model.monitor(Xn, batches=weeks)
+        model.monitor(Xn, batches=np.where(shuffled == weeks[0], "b", "a"))  # text: no order
+        model.monitor(Xn, batch_size=70)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numbers
+import warnings
 from typing import Any
 
 import numpy as np
@@ -33,7 +34,8 @@ def prior_by_batch(
         Posteriors of the unlabelled rows, in arrival order.
     batches : array-like of shape (n,), default=None
         Batch label of each row (a week number, a date, a string); batches appear in the table
-        in the order of their first row. Exactly one of ``batches`` and ``batch_size`` is given.
+        in the order of their first row (numbers or dates whose rows are not in increasing
+        order warn). Exactly one of ``batches`` and ``batch_size`` is given.
     batch_size : int, default=None
         Consecutive batches of this many rows (the last one may be shorter); labelled 0, 1, ...
     sample_weight : array-like of shape (n,), default=None
@@ -81,6 +83,19 @@ def prior_by_batch(
             labels = labels.astype(str)
     uniq, first, inverse = np.unique(labels, return_index=True, return_inverse=True)
     order = np.argsort(first, kind="stable")
+    if batch_size is None and labels.dtype.kind in "iufmM" and np.any(np.diff(order) < 0):
+        # numbers or dates whose first rows are not in increasing order: a chart read off the
+        # table would run out of time order
+        late = int(np.flatnonzero(np.diff(order) < 0)[0])
+        warnings.warn(
+            f"prior_by_batch: the batch labels are {'dates' if labels.dtype.kind in 'mM' else 'numbers'} "
+            f"but their rows are not in increasing order (batch {uniq[order[late + 1]]} "
+            f"first appears after batch {uniq[order[late]]}). The table follows the "
+            "order of each batch's first row, so a chart on it would run out of order; sort the "
+            "rows by batch first if the batches are times.",
+            UserWarning,
+            stacklevel=3,
+        )
     dtype = [
         ("batch", uniq.dtype),
         ("n_rows", np.int64),
