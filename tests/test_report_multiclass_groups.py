@@ -119,3 +119,90 @@ def test_cli_group_column_with_class_columns(three, tmp_path, capsys, monkeypatc
     assert json.loads(captured.out)["n_classes"] == 3
     page = out.read_text(encoding="utf-8")
     assert page.count('<tr data-group="') == 4  # three sizes and "all"
+
+
+def _wine():
+    """scikit-learn's bundled wine data: a weak logistic model on two features, held-out rows
+    split by ash content (two groups of about 60 rows)."""
+    from sklearn.datasets import load_wine
+    from sklearn.linear_model import LogisticRegression
+
+    d = load_wine()
+    X = (d.data - d.data.mean(0)) / d.data.std(0)
+    idx = np.random.default_rng(0).permutation(len(d.target))
+    tr, te = idx[:58], idx[58:]
+    p = LogisticRegression(C=0.05, max_iter=2000).fit(X[tr][:, [1, 4]], d.target[tr]) \
+        .predict_proba(X[te][:, [1, 4]])
+    g = np.where(d.data[te, 2] > np.median(d.data[te, 2]), "more ash", "less ash")
+    return d.target[te], p, g
+
+
+def test_multiclass_gap_intervals_match_scipys_two_sample_bootstrap():
+    """Reference: ``scipy.stats.bootstrap`` with two samples (each resampled independently, the
+    same stratified bootstrap), percentile method, on the per-row log losses (scikit-learn's
+    definition, -log of the probability of the observed class)."""
+    from scipy import stats
+
+    y, p, g = _wine()
+    acts = np.argmax(p, axis=1)
+    cost = (acts != y).astype(float)
+    res = multiclass_by_group(y, p, g, actions=acts, row_cost=cost,
+                              action_names=("a", "b", "c"), n_resamples=4000, random_state=0,
+                              min_rows=30, min_events=3)
+    by = {x.metric: x for x in res.gaps}
+    gap = by["log_loss"]
+    losses = {name: -np.log(p[g == name][np.arange(np.sum(g == name)), y[g == name]])
+              for name in ("more ash", "less ash")}
+    assert losses[gap.highest].mean() - losses[gap.lowest].mean() == pytest.approx(gap.gap,
+                                                                                   rel=1e-9)
+    ref = stats.bootstrap((losses[gap.highest], losses[gap.lowest]),
+                          lambda u, v, axis=-1: u.mean(axis) - v.mean(axis),
+                          method="percentile", n_resamples=20000,
+                          random_state=np.random.default_rng(1)).confidence_interval
+    width = ref.high - ref.low
+    assert gap.interval[0] == pytest.approx(ref.low, abs=0.08 * width)
+    assert gap.interval[1] == pytest.approx(ref.high, abs=0.08 * width)
+    # the mean cost here is the error rate: a difference of two proportions, close to Wald's
+    gap = by["mean_cost"]
+    rates = [cost[g == name].mean() for name in (gap.highest, gap.lowest)]
+    half = stats.norm.ppf(0.975) * np.sqrt(sum(r * (1 - r) / np.sum(g == name) for r, name in
+                                                zip(rates, (gap.highest, gap.lowest), strict=True)))
+    assert gap.interval[0] == pytest.approx(gap.gap - half, abs=0.25 * half)
+    assert gap.interval[1] == pytest.approx(gap.gap + half, abs=0.25 * half)
+    # the binned errors and the largest class-share gap get none (biased when resampled)
+    for name in ("top_label_error", "classwise_error", "largest_share_gap"):
+        assert np.isnan(by[name].interval).all()
+    for name in ("brier", "share a"):
+        assert np.isfinite(by[name].interval).all()
+    none = multiclass_by_group(y, p, g, n_resamples=0, min_rows=30, min_events=3)
+    assert all(np.isnan(x.interval).all() for x in none.gaps)
+
+
+def test_multiclass_report_quotes_gap_intervals_and_names_missing_classes():
+    """scikit-learn's bundled digits, the often-confused 1, 7 and 9, a weak model on eight
+    pixels; groups by the ink in one pixel, plus a group holding no 9."""
+    from sklearn.datasets import load_digits
+    from sklearn.linear_model import LogisticRegression
+
+    d = load_digits()
+    keep = np.isin(d.target, [1, 7, 9])
+    X, digit = d.data[keep], d.target[keep]
+    y = np.searchsorted([1, 7, 9], digit)
+    idx = np.random.default_rng(0).permutation(len(y))
+    tr, te = idx[:150], idx[150:]
+    cols = [20, 21, 26, 28, 36, 42, 43, 50]
+    p = LogisticRegression(C=0.01, max_iter=2000).fit(X[tr][:, cols], y[tr]).predict_proba(
+        X[te][:, cols])
+    y = y[te]
+    g = np.where(X[te, 13] > np.median(X[te, 13]), "inked", "blank")
+    g = np.where((y != 2) & (np.arange(len(y)) % 10 == 0), "odd", g)
+    names = ("one", "seven", "nine")
+    content, page = build_report(y_true=np.asarray(names)[y], y_prob=p, groups=g,
+                                 n_resamples=200, class_names=names)
+    checks = content.group_checks
+    judged = [c.group for c in checks.groups if c.judged]
+    assert sorted(judged) == ["blank", "inked"], [(c.group, c.effective_rows,
+                                                   c.rarest_class_rows) for c in checks.groups]
+    assert any(np.isfinite(x.interval).all() for x in checks.gaps)
+    assert "difference " in page.split('id="group-gaps"')[1]
+    assert any("odd" in n and "nine" in n for n in checks.notes), checks.notes

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numbers
 import warnings
+from collections.abc import Callable
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from typing import Any
@@ -530,33 +531,50 @@ def _gap_interval(gap: GroupGap, rows_of: dict, y, p, w, cutoff, matrix, n_resam
                   level: float, random_state, notes: list[str]) -> GroupGap:
     """``gap`` with the percentile interval of ``value(highest) - value(lowest)``, rows
     resampled within each group (counts as weights, as :func:`bootstrap_interval` does)."""
+    def value(idx: np.ndarray, ww: np.ndarray) -> float:
+        return _metric_of(gap.metric, y[idx], p[idx], ww, cutoff, matrix)
+
+    return gap_with_interval(gap, value, rows_of, w, n_resamples, level, random_state, notes)
+
+
+def gap_with_interval(gap: GroupGap, value: Callable[[np.ndarray, np.ndarray], float],
+                      rows_of: dict, w: np.ndarray, n_resamples: int, level: float,
+                      random_state, notes: list[str], label: str | None = None) -> GroupGap:
+    """``gap`` with the percentile interval of ``value(highest) - value(lowest)``.
+
+    A stratified bootstrap: the rows of each of the two groups are resampled independently,
+    the draw counts multiplying the weights (as :func:`bootstrap_interval` does), and
+    ``value(row_indices, weights)`` evaluated on each. Resamples that give no value are left
+    out and counted in ``notes``; with fewer than half left, no interval.
+    """
     from dataclasses import replace
 
     from sklearn.utils import check_random_state
 
     rng = check_random_state(random_state)
-    parts = [(y[rows_of[c]], p[rows_of[c]], w[rows_of[c]]) for c in (gap.highest, gap.lowest)]
+    name = gap.metric if label is None else label
+    parts = [np.flatnonzero(rows_of[c]) for c in (gap.highest, gap.lowest)]
     diffs = np.full(n_resamples, np.nan)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # resamples that cannot give a value are counted below
         for r in range(n_resamples):
             vals = []
-            for yy, pp, ww in parts:
-                counts = np.bincount(rng.randint(0, yy.shape[0], size=yy.shape[0]),
-                                     minlength=yy.shape[0])
+            for idx in parts:
+                counts = np.bincount(rng.randint(0, idx.shape[0], size=idx.shape[0]),
+                                     minlength=idx.shape[0])
                 try:
-                    vals.append(_metric_of(gap.metric, yy, pp, ww * counts, cutoff, matrix))
+                    vals.append(value(idx, w[idx] * counts))
                 except (ValueError, np.linalg.LinAlgError):
                     vals.append(float("nan"))
             diffs[r] = vals[0] - vals[1]
     ok = diffs[np.isfinite(diffs)]
     failed = n_resamples - ok.shape[0]
     if ok.shape[0] < max(2, n_resamples // 2):
-        notes.append(f"gap in {gap.metric}: no interval ({failed} of {n_resamples} resamples "
+        notes.append(f"gap in {name}: no interval ({failed} of {n_resamples} resamples "
                      "gave no value).")
         return gap
     if failed:
-        notes.append(f"gap in {gap.metric}: {failed} of {n_resamples} resamples gave no value "
+        notes.append(f"gap in {name}: {failed} of {n_resamples} resamples gave no value "
                      "and were left out of its interval.")
     alpha = 1.0 - level
     lo, hi = np.quantile(ok, [alpha / 2.0, 1.0 - alpha / 2.0])

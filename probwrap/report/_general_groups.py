@@ -23,9 +23,16 @@ from ..metrics import (
     expected_calibration_error,
     log_loss,
 )
-from ..metrics._groups import MIN_EVENTS, MIN_ROWS, GroupGap, check_group_labels
+from ..metrics._groups import (
+    MIN_EVENTS,
+    MIN_ROWS,
+    GroupGap,
+    check_group_labels,
+    gap_with_interval,
+)
 from ..metrics._inputs import count_scale_weights
 from ._common import NoteLog
+from ._groups_html import gap_interval_text
 from ._html_parts import _text
 
 __all__ = ["ClassGroupCheck", "ClassGroupChecks", "multiclass_by_group",
@@ -70,7 +77,7 @@ class ClassGroupChecks:
 
 
 def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, level, seed,
-         min_rows, min_events, classes_present, log: NoteLog) -> ClassGroupCheck:
+         min_rows, min_events, classes_present, class_names, log: NoteLog) -> ClassGroupCheck:
     key, about = f"group:{group}", f"group {group}"
     # sizes as calibration_by_group judges them: weights on the row-count scale, summed
     eff_class = [float(w[y == j].sum()) for j in classes_present]
@@ -85,8 +92,10 @@ def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, l
 
     lacking = [int(j) for j in classes_present if not np.any(w[y == j] > 0)]
     if lacking and group != "all":
+        named = ", ".join(str(class_names[j]) if class_names is not None else str(j)
+                          for j in lacking)
         log.add(key, about, "no interval",
-                f"no row of class(es) {lacking} with weight > 0: no bootstrap interval for the "
+                f"no row of class(es) {named} with weight > 0: no bootstrap interval for the "
                 "Brier score or log loss (resamples within the group never hold those classes)")
 
     def interval(fn):
@@ -150,12 +159,20 @@ def multiclass_by_group(
     action_names: tuple[str, ...] | None = None, rule_label: str | None = None,
     n_bins: int = 10, n_resamples: int = 200, confidence_level: float = 0.95,
     random_state: int = 0, min_rows: float = MIN_ROWS, min_events: float = MIN_EVENTS,
+    class_names: Any = None,
 ) -> ClassGroupChecks:
     """Multiclass checks in every group; see the module docstring.
 
     ``y_index`` holds column indices of ``proba``; ``actions`` (column of the cost matrix taken
     for each row) and ``row_cost`` (the realised cost of each row) describe the rule in use.
     Warnings met in a group become notes naming the group (and are warned once more).
+    ``class_names`` (one per column of ``proba``) name the classes in the notes.
+
+    The gaps in the Brier score, log loss, mean cost and action shares get a percentile
+    bootstrap interval of the difference between the highest and lowest group (rows resampled
+    within each of the two, as the binary table does); the binned calibration errors and the
+    largest class-share gap get none: resampled, they are biased upwards by amounts that
+    differ with the group's size, so their difference has no honest percentile interval.
     """
     n, k = proba.shape
     g = check_group_labels(groups, n)
@@ -165,13 +182,16 @@ def multiclass_by_group(
     n_actions = None if action_names is None else len(action_names)
     log = NoteLog()
     args = (n_bins, n_resamples, confidence_level, int(random_state), min_rows, min_events,
-            present, log)
+            present, class_names, log)
     labels, first = np.unique(g, return_index=True)
     checks = []
+    rows_of = {}
     for label in labels[np.argsort(first)]:
         rows = g == label
+        name = label.item() if hasattr(label, "item") else label
+        rows_of[name] = rows
         checks.append(_one(
-            label.item() if hasattr(label, "item") else label, y_index[rows], proba[rows],
+            name, y_index[rows], proba[rows],
             w[rows], k, None if row_cost is None else row_cost[rows],
             None if actions is None else actions[rows], n_actions, *args))
     overall = _one("all", y_index, proba, w, k, row_cost, actions, n_actions, *args)
@@ -182,10 +202,46 @@ def multiclass_by_group(
              f"{c.rarest_class_rows:.0f} of its rarest class)" for c in small]
     notes += [f"{n.about}: {n.kind}: {n.message}" + (f" ({n.count} times)" if n.count > 1
                                                        else "") for n in log.notes]
-    return ClassGroupChecks(groups=[*judged, *small], gaps=_gaps(judged, overall, action_names),
+    gaps = _gaps(judged, overall, action_names)
+    if n_resamples and gaps:
+        computed: list[str] = []
+        gaps = [_with_interval(gap, rows_of, y_index, proba, w, k, actions, row_cost, action_names,
+                               int(n_resamples), float(confidence_level), int(random_state),
+                               computed) for gap in gaps]
+        notes += computed
+    return ClassGroupChecks(groups=[*judged, *small], gaps=gaps,
                             overall=overall, min_rows=min_rows, min_events=min_events,
                             n_bins=n_bins, action_names=action_names, rule_label=rule_label,
                             notes=notes)
+
+
+_NO_GAP_INTERVAL = ("top_label_error", "classwise_error", "largest_share_gap")
+
+
+def _with_interval(gap: GroupGap, rows_of: dict, y: np.ndarray, p: np.ndarray, w: np.ndarray,
+                   k: int, actions: np.ndarray | None, row_cost: np.ndarray | None,
+                   action_names: tuple[str, ...] | None, n_resamples: int, level: float,
+                   seed: int, notes: list[str]) -> GroupGap:
+    """``gap`` with its stratified bootstrap interval (none for the binned errors)."""
+    if gap.metric in _NO_GAP_INTERVAL:
+        return gap
+    labels = list(range(k))
+    if gap.metric == "brier":
+        def value(idx, ww):
+            return float(brier_score(y[idx], p[idx], sample_weight=ww, labels=labels))
+    elif gap.metric == "log_loss":
+        def value(idx, ww):
+            return float(log_loss(y[idx], p[idx], sample_weight=ww, labels=labels))
+    elif gap.metric == "mean_cost":
+        def value(idx, ww):
+            return float(np.dot(ww, row_cost[idx]) / ww.sum())
+    else:  # "share <action>"
+        j = list(action_names).index(gap.metric[len("share "):])
+
+        def value(idx, ww):
+            return float(np.dot(ww, actions[idx] == j) / ww.sum())
+    return gap_with_interval(gap, value, rows_of, w, n_resamples, level, seed, notes,
+                             label=gap.metric.replace("_", " "))
 
 
 def _cell(value: float, digits: int = 4) -> str:
@@ -225,7 +281,8 @@ def multiclass_group_section(c: Any) -> str:
         rows.append(f'<tr data-group="{_text(str(g.group))}">{"".join(cells)}</tr>')
     gaps = "".join(
         f"<li>{_text(x.metric.replace('_', ' '))}: {x.gap:.4f} (highest "
-        f"{_text(str(x.highest))}, lowest {_text(str(x.lowest))})</li>" for x in checks.gaps)
+        f"{_text(str(x.highest))}, lowest {_text(str(x.lowest))}{gap_interval_text(x)})</li>"
+        for x in checks.gaps)
     said = (f" The cost and action columns are for the rule in use ({_text(checks.rule_label)})."
             if rule and checks.rule_label else "")
     notes = "".join(f"<p>{_text(n)}</p>" for n in checks.notes)
@@ -240,6 +297,9 @@ def multiclass_group_section(c: Any) -> str:
         "weights summing to less than the number of rows are first rescaled to Kish's "
         "effective size); their intervals are shown but not supported (with few "
         "rows they cover far less than their level), and a group missing a class has none. "
+        "The gaps in the scores, mean cost and action shares carry a bootstrap interval of the "
+        "difference between the two groups named (rows resampled within each); one that holds 0 "
+        "means these data do not establish their order. "
         "Equal calibration and equal error rates across groups are different notions of fairness; when base rates differ they cannot both hold.</p>"
         f'<table id="group-checks"><thead><tr>{head}</tr></thead>'
         f"<tbody>{''.join(rows)}</tbody></table>"

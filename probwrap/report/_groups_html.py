@@ -45,18 +45,9 @@ def group_section(c: Any) -> str:
             cells += [_cell(g.share_acted_on), _cell(g.false_positive_rate),
                       _cell(g.false_negative_rate), _cell(g.mean_cost)]
         rows.append(f'<tr data-group="{_text(str(g.group))}">{"".join(cells)}</tr>')
-    def _gap_interval(x: Any) -> str:
-        lo, hi = getattr(x, "interval", (float("nan"), float("nan")))
-        if lo != lo:
-            return ""
-        scale = " on the log scale" if x.metric == "calibration_slope" else ""
-        return (f"; difference {_text(str(x.highest))} minus {_text(str(x.lowest))}{scale} "
-                f"[{lo:.4f}, {hi:.4f}]" + (", which contains 0: the order of these two is not "
-                                            "established" if lo <= 0.0 <= hi else ""))
-
     gaps = "".join(
         f"<li>{_text(x.metric.replace('_', ' '))}: {x.gap:.4f} (highest "
-        f"{_text(str(x.highest))}, lowest {_text(str(x.lowest))}{_gap_interval(x)})</li>"
+        f"{_text(str(x.highest))}, lowest {_text(str(x.lowest))}{gap_interval_text(x)})</li>"
         for x in checks.gaps
     )
     rule = (f" The decision columns are for the rule &ldquo;act when p &gt; {checks.cutoff:.4f}"
@@ -84,3 +75,14 @@ def group_section(c: Any) -> str:
            if gaps else "<p>Fewer than two judged groups: no gaps to compare.</p>")
         + notes + "</section>"
     )
+
+
+def gap_interval_text(x: Any) -> str:
+    """The HTML clause quoting a gap's bootstrap interval (``""`` without one)."""
+    lo, hi = getattr(x, "interval", (float("nan"), float("nan")))
+    if lo != lo:
+        return ""
+    scale = " on the log scale" if x.metric == "calibration_slope" else ""
+    return (f"; difference {_text(str(x.highest))} minus {_text(str(x.lowest))}{scale} "
+            f"[{lo:.4f}, {hi:.4f}]" + (", which contains 0: the order of these two is not "
+                                        "established" if lo <= 0.0 <= hi else ""))
