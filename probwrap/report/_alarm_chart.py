@@ -24,6 +24,7 @@ from ..plot._style import PALETTE
 from ..shift import (
     CusumResult,
     baseline_error_run_length,
+    batch_effective_rows,
     cusum_alarms,
     cusum_run_length,
     decision_interval_for_run_length,
@@ -199,7 +200,8 @@ def batch_alarm(
                        dtype=float)
     se = width / (2.0 * norm.ppf(0.5 + confidence_level / 2.0)) if np.all(width > 0) else None
     labels = [str(b) for b in np.asarray(table["batch"]).tolist()]
-    alarm = alarm_on_scores(z, labels, np.asarray(table["n_rows"], dtype=float),
+    # Kish's effective rows of each batch: with weights, what the batch's shift test counts
+    alarm = alarm_on_scores(z, labels, batch_effective_rows(table),
                             labelled_rows=labelled_rows, baseline=float(baseline),
                             standard_error=se, reference=reference,
                             decision_interval=decision_interval)

@@ -420,8 +420,12 @@ def monitor_proba(est, source, seed, proba, w):
         )
     if interval is None:
         interval = np.column_stack([res.prior, res.prior])
-    return (proba.shape[0], res.prior, interval[:, 0], interval[:, 1], res.shift_statistic,
-            res.shift_pvalue, res.converged), unit
+    from ..shift import class_shift_scores
+
+    n_eff = float(w.sum() ** 2 / np.dot(w, w)) if w.size else 0.0  # Kish, as prior_by_batch
+    return (proba.shape[0], n_eff, res.prior, interval[:, 0], interval[:, 1],
+            res.shift_statistic, res.shift_pvalue, res.converged,
+            class_shift_scores(est, proba, w)), unit
 
 
 def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weight: Any):
@@ -462,12 +466,14 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
     dtype = [
         ("batch", np.int64),
         ("n_rows", np.int64),
+        ("n_effective", float),
         ("prior", float, (k,)),
         ("lower", float, (k,)),
         ("upper", float, (k,)),
         ("shift_statistic", float),
         ("shift_pvalue", float),
         ("converged", bool),
+        ("class_shift_score", float, (k,)),
     ]
     empty = [i for i, r in enumerate(rows) if r is None]
     if empty:

@@ -591,12 +591,14 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
     schema = T.StructType([
         T.StructField("batch", batch_type),
         T.StructField("n_rows", T.LongType()),
+        T.StructField("n_effective", T.DoubleType()),
         T.StructField("prior", T.ArrayType(T.DoubleType())),
         T.StructField("lower", T.ArrayType(T.DoubleType())),
         T.StructField("upper", T.ArrayType(T.DoubleType())),
         T.StructField("shift_statistic", T.DoubleType()),
         T.StructField("shift_pvalue", T.DoubleType()),
         T.StructField("converged", T.BooleanType()),
+        T.StructField("class_shift_score", T.ArrayType(T.DoubleType())),
         T.StructField("weight_unit", T.DoubleType()),
         T.StructField("error", T.StringType()),
     ])
@@ -609,9 +611,11 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
             return estimate(pdf, key)
         except ValueError as exc:  # raised on the driver, as in memory
             return pd.DataFrame({
-                "batch": [key], "n_rows": [len(pdf)], "prior": [[]], "lower": [[]],
+                "batch": [key], "n_rows": [len(pdf)], "n_effective": [np.nan], "prior": [[]],
+                "lower": [[]],
                 "upper": [[]], "shift_statistic": [np.nan], "shift_pvalue": [np.nan],
-                "converged": [False], "weight_unit": [1.0], "error": [str(exc)],
+                "converged": [False], "class_shift_score": [[]], "weight_unit": [1.0],
+                "error": [str(exc)],
             })
 
     def estimate(pdf, key):
@@ -628,13 +632,15 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         )
         order = np.lexsort((w, *proba.T[::-1]))  # by class-0 probability, ..., then weight
         row, unit = monitor_proba(prior_est, src, seed_of[key], proba[order], w[order])
-        n, prior, lower, upper, stat, pvalue, conv = row
+        n, n_eff, prior, lower, upper, stat, pvalue, conv, by_class = row
         return pd.DataFrame({
-            "batch": [key], "n_rows": [int(n)], "prior": [list(map(float, prior))],
+            "batch": [key], "n_rows": [int(n)], "n_effective": [float(n_eff)],
+            "prior": [list(map(float, prior))],
             "lower": [list(map(float, lower))], "upper": [list(map(float, upper))],
             "shift_statistic": [float(stat) if stat is not None else np.nan],
             "shift_pvalue": [float(pvalue) if pvalue is not None else np.nan],
-            "converged": [bool(conv)], "weight_unit": [float(unit)], "error": [None],
+            "converged": [bool(conv)], "class_shift_score": [list(map(float, by_class))],
+            "weight_unit": [float(unit)], "error": [None],
         })
 
     rows = X.select(*features, *named_cols).groupBy(batch_col).applyInPandas(
@@ -650,18 +656,21 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
     dtype = [
         ("batch", label_arr.dtype),
         ("n_rows", np.int64),
+        ("n_effective", float),
         ("prior", float, (k,)),
         ("lower", float, (k,)),
         ("upper", float, (k,)),
         ("shift_statistic", float),
         ("shift_pvalue", float),
         ("converged", bool),
+        ("class_shift_score", float, (k,)),
     ]
     table = np.zeros(len(labels), dtype=dtype)
     for i, lab in enumerate(labels):
         r = by_label[lab]
-        table[i] = (lab, r["n_rows"], r["prior"], r["lower"], r["upper"], r["shift_statistic"],
-                    r["shift_pvalue"], r["converged"])
+        table[i] = (lab, r["n_rows"], r["n_effective"], r["prior"], r["lower"], r["upper"],
+                    r["shift_statistic"], r["shift_pvalue"], r["converged"],
+                    r["class_shift_score"])
     from ._dask import warn_monitor_units
 
     warn_monitor_units([r["weight_unit"] for r in rows])

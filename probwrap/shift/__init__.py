@@ -9,6 +9,7 @@ from ._alarms import (
     BaselineErrorRunLength,
     CusumResult,
     baseline_error_run_length,
+    batch_effective_rows,
     cusum_alarms,
     cusum_run_length,
     decision_interval_for_run_length,
@@ -16,7 +17,7 @@ from ._alarms import (
     signed_shift_scores,
 )
 from ._batch_cost import expected_cost_by_batch
-from ._by_batch import prior_by_batch
+from ._by_batch import class_shift_scores, prior_by_batch
 from ._calibration import BiasCorrectedScaling
 from ._change_points import ChangePointResult, change_point_posterior
 from ._confusion import acc_prior, bbse_prior, binomial_interval, heldout_confusion
@@ -48,6 +49,7 @@ __all__ = [
     "baseline_error_run_length",
     "decision_interval_for_run_length",
     "labelled_share_of_variance",
+    "batch_effective_rows",
     "signed_shift_scores",
     "INTERVALS",
     "PriorNotIdentifiedWarning",
@@ -68,6 +70,7 @@ __all__ = [
     "expected_cost_by_batch",
     "heldout_confusion",
     "prior_by_batch",
+    "class_shift_scores",
     "prior_log_likelihood",
     "project_to_simplex",
     "shift_cutoff",

@@ -19,6 +19,7 @@ __all__ = [
     "baseline_error_run_length",
     "decision_interval_for_run_length",
     "labelled_share_of_variance",
+    "batch_effective_rows",
     "signed_shift_scores",
 ]
 
@@ -243,6 +244,24 @@ def _probability(value: Any, name: str) -> float:
     return float(value)
 
 
+def batch_effective_rows(table: np.ndarray) -> np.ndarray:
+    """Kish's effective rows of each batch of a :func:`prior_by_batch` table (its
+    ``n_effective`` field; ``n_rows`` for a table made before that field existed).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift import batch_effective_rows
+    >>> table = np.zeros(2, dtype=[("n_rows", np.int64), ("n_effective", float)])
+    >>> table["n_rows"], table["n_effective"] = [4, 4], [4.0, 2.5]
+    >>> batch_effective_rows(table).tolist()
+    [4.0, 2.5]
+    """
+    names = getattr(getattr(table, "dtype", None), "names", None) or ()
+    return np.asarray(table["n_effective"] if "n_effective" in names else table["n_rows"],
+                      dtype=float)
+
+
 def labelled_share_of_variance(batch_rows: Any, labelled_rows: float) -> np.ndarray:
     r"""Share of each batch's standardised shift that the labelled rows' error takes.
 
@@ -254,13 +273,22 @@ def labelled_share_of_variance(batch_rows: Any, labelled_rows: float) -> np.ndar
     standardised values of the batches scatter with variance :math:`1 - \rho` about a common
     offset, itself drawn with variance :math:`\rho`.
 
+    With weights both sizes are Kish's (1965) effective numbers of rows,
+    :math:`(\sum w)^2 / \sum w^2`, as the shift test counts them (``docs/weights.md``:
+    relative weights): scaling all the weights of a batch or of the labelled rows leaves
+    :math:`\rho` unchanged, and equal weights give the unweighted value.
+
     Parameters
     ----------
-    batch_rows : float or array-like
-        (Effective) rows of each batch.
+    batch_rows : float, array-like, or a :func:`prior_by_batch` table
+        Effective rows of each batch. A table (from :func:`prior_by_batch` or
+        :meth:`PriorShiftWrapper.monitor`) gives its ``n_effective`` field, Kish's size of each
+        batch's weights; pass that rather than ``n_rows``, which counts rows whatever their
+        weights.
     labelled_rows : float
-        Effective labelled rows the baseline was estimated from (``np.inf``: a baseline taken
-        as exact, share 0).
+        Effective labelled rows the baseline was estimated from (Kish's size of the labelled
+        weights: ``PriorEstimator.n_source_effective_``; ``np.inf``: a baseline taken as exact,
+        share 0).
 
     Returns
     -------
@@ -273,6 +301,8 @@ def labelled_share_of_variance(batch_rows: Any, labelled_rows: float) -> np.ndar
     >>> labelled_share_of_variance([200, 10], 150).round(3).tolist()
     [0.571, 0.062]
     """
+    if getattr(getattr(batch_rows, "dtype", None), "names", None):
+        batch_rows = batch_effective_rows(batch_rows)
     n_b = np.asarray(batch_rows, dtype=float)
     if not np.all(np.isfinite(n_b)) or np.any(n_b <= 0):
         raise ValueError("`batch_rows` must be positive and finite.")
@@ -286,7 +316,7 @@ def labelled_share_of_variance(batch_rows: Any, labelled_rows: float) -> np.ndar
 
 
 def signed_shift_scores(table: np.ndarray, baseline: float, *, class_index: int = 1) -> np.ndarray:
-    r"""Standardised shift of each batch of a binary :func:`prior_by_batch` table, for the CUSUM.
+    r"""Standardised shift of each batch of a :func:`prior_by_batch` table, for the CUSUM.
 
     The signed square root of each batch's two-sample shift statistic (on the chi-square
     scale with one degree of freedom), positive where the batch's estimate lies above
@@ -298,12 +328,18 @@ def signed_shift_scores(table: np.ndarray, baseline: float, *, class_index: int 
     (``prior_strength``) with the standard error of the unshrunk one, which in batches of
     5-20 rows spreads with a standard deviation of 0.2-0.4 instead of 1 and cannot sound.
 
+    With more than two classes the shift statistic has ``k - 1`` degrees of freedom and no
+    sign; the value of class ``class_index`` is then the signed root of its one-vs-rest test
+    (the table's ``class_shift_score`` field, :func:`class_shift_scores`), positive where the
+    class is more frequent than in the labelled rows. With two classes that is the value above.
+
     Parameters
     ----------
     table : structured array
         From :func:`prior_by_batch` or :meth:`PriorShiftWrapper.monitor` (two classes).
     baseline : float
-        The source prevalence (of class ``class_index``).
+        The source prevalence (of class ``class_index``); gives the sign of a two-class table's
+        values (not used for more classes, whose sign comes from the one-vs-rest test).
     class_index : int, default=1
 
     Returns
@@ -323,11 +359,23 @@ def signed_shift_scores(table: np.ndarray, baseline: float, *, class_index: int 
     (3,)
     """
     prior = np.asarray(table["prior"], dtype=float)
-    if prior.ndim != 2 or prior.shape[1] != 2:
-        raise ValueError("`table` must be a prior_by_batch table of a two-class problem (the "
-                         "shift statistic of more classes has more degrees of freedom).")
+    if prior.ndim != 2 or prior.shape[1] < 2:
+        raise ValueError("`table` must be a prior_by_batch table (a `prior` column per class).")
     if not (isinstance(baseline, numbers.Real) and np.isfinite(baseline)):
         raise ValueError(f"`baseline` must be a finite number; got {plain(baseline)!r}.")
+    k = prior.shape[1]
+    if not (isinstance(class_index, numbers.Integral) and -k <= class_index < k):
+        raise ValueError(f"`class_index` must be an integer in [0, {k}); got "
+                         f"{plain(class_index)!r}.")
+    if k > 2:
+        names = table.dtype.names or ()
+        if "class_shift_score" not in names:
+            raise ValueError("`table` of more than two classes has no `class_shift_score` "
+                             "field (made before it existed): rebuild it with prior_by_batch.")
+        z = np.asarray(table["class_shift_score"][:, class_index], dtype=float)
+        if not np.all(np.isfinite(z)):
+            raise ValueError("a batch's one-vs-rest shift score is not finite.")
+        return z
     stat = np.asarray(table["shift_statistic"], dtype=float)
     if not np.all(np.isfinite(stat)):
         raise ValueError("a batch's shift statistic is not finite; no standardised shift.")

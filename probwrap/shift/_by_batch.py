@@ -11,9 +11,83 @@ from sklearn.utils import check_random_state
 
 from .._validation import check_proba, check_sample_weight, plain
 from ..calibration._base import rescale_extreme_weights
-from ._estimator import PriorEstimator
+from ._estimator import PriorEstimator, _current_source_score, _kish
+from ._shift_tests import _mean_cov, _score_rows, _score_stat_moments
 
-__all__ = ["prior_by_batch"]
+__all__ = ["prior_by_batch", "class_shift_scores"]
+
+
+def class_shift_scores(estimator: PriorEstimator, proba: Any, sample_weight: Any = None
+                       ) -> np.ndarray:
+    r"""Signed root of each class's one-vs-rest shift test on one batch, shape (k,).
+
+    The shift test of :meth:`PriorEstimator.estimate` compares the mean per-row score of the
+    prior log-likelihood at the source prior, :math:`u_j = p_j/\pi_j - p_0/\pi_0`
+    (:math:`j \ge 1`), between the batch and the labelled rows. Collapsing the classes to
+    "class c" against "the rest", the two-class score is
+    :math:`p_c/\pi_c - (1 - p_c)/(1 - \pi_c) = (q_c - 1)/(1 - \pi_c)` with
+    :math:`q_c = p_c/\pi_c = u_c + 1 - \sum_{j\ge1} \pi_j u_j` (:math:`u_0 = 0`; from
+    :math:`\sum_j \pi_j q_j = 1`): a fixed linear combination :math:`a_c^\top u`. Its test is the
+    multiclass test projected on :math:`a_c` (same pooled variance, same degrees of freedom,
+    one of them in the numerator), mapped to the normal at the same tail probability and
+    signed by the direction of the difference: positive where class ``c`` is more frequent in
+    the batch. With two classes the value of class 1 is the binary test's signed root
+    (:func:`signed_shift_scores`) and that of class 0 its negative.
+
+    :func:`prior_by_batch` (and ``monitor``) store these per batch in the field
+    ``class_shift_score``; chart one class with :func:`signed_shift_scores` and
+    :func:`cusum_alarms`.
+
+    Parameters
+    ----------
+    estimator : PriorEstimator
+        A fitted estimator.
+    proba : array-like of shape (n, k)
+        Posteriors of the batch's rows (before the estimator's calibration, as for
+        :meth:`PriorEstimator.estimate`).
+    sample_weight : array-like of shape (n,), default=None
+        Relative weights (Kish's effective size counts the rows, as in the shift test).
+
+    Returns
+    -------
+    ndarray of shape (k,)
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift import PriorEstimator, class_shift_scores
+    >>> rng = np.random.default_rng(0)
+    >>> proba = rng.dirichlet([2.0, 2.0, 2.0], size=900)
+    >>> y = np.array([rng.choice(3, p=row) for row in proba])
+    >>> est = PriorEstimator(n_resamples=0).fit(proba[:600], y[:600])
+    >>> class_shift_scores(est, proba[600:]).shape
+    (3,)
+    """
+    p_raw = check_proba(proba, name="proba", ndim=2)
+    w = check_sample_weight(sample_weight, p_raw.shape[0])
+    p = estimator.calibrate(p_raw)
+    src = np.asarray(estimator.source_prior_, dtype=float)
+    k = src.shape[0]
+    n_eff = _kish(w)
+    m_t, c_t, _ = _mean_cov(_score_rows(p, src), w)
+    source = _current_source_score(getattr(estimator, "_source_score", None))
+    out = np.zeros(k)
+    for c in range(k):
+        a = -src[1:].copy()
+        if c > 0:
+            a[c - 1] += 1.0
+        a /= 1.0 - src[c]
+        target = (np.atleast_1d(a @ m_t), np.atleast_2d(a @ c_t @ a), n_eff)
+        projected = None
+        if source is not None:
+            m_s, parts = source
+            projected = (np.atleast_1d(a @ m_s),
+                         tuple((np.atleast_2d(a @ np.atleast_2d(v) @ a), n) for v, n in parts))
+        res = _score_stat_moments(target, projected, 2, pooled=True, source_prior=src)
+        diff = float(target[0][0] - (projected[0][0] if projected is not None else 0.0))
+        out[c] = np.sign(diff) * np.sqrt(max(res.statistic, 0.0))
+    return out
+
 
 
 def prior_by_batch(
@@ -43,8 +117,12 @@ def prior_by_batch(
     Returns
     -------
     numpy structured array with one record per batch and fields ``batch``, ``n_rows`` (int),
+    ``n_effective`` (float: Kish's effective number of rows of the batch, ``(sum w)^2 / sum
+    w^2``, the number of rows without weights; what the batch's shift test counts),
     ``prior``, ``lower``, ``upper`` (float, shape (k,) each), ``shift_statistic``,
-    ``shift_pvalue`` (float) and ``converged`` (bool). ``table["prior"][:, 1]`` is the series of
+    ``shift_pvalue`` (float), ``converged`` (bool) and ``class_shift_score`` (float, shape (k,):
+    the signed root of each class's one-vs-rest shift test, :func:`class_shift_scores`; roughly
+    a standard normal per batch when nothing moved, for charting one class of many). ``table["prior"][:, 1]`` is the series of
     positive-class prevalences of a binary problem.
 
     Examples
@@ -58,7 +136,7 @@ def prior_by_batch(
     >>> est = PriorEstimator(n_resamples=20, random_state=0).fit(proba[:300], y[:300])
     >>> table = prior_by_batch(est, proba[300:], batch_size=100)
     >>> table["n_rows"].tolist(), table.dtype.names[:3]
-    ([100, 100, 100], ('batch', 'n_rows', 'prior'))
+    ([100, 100, 100], ('batch', 'n_rows', 'n_effective'))
     """
     estimator._check_fitted()
     p = check_proba(proba, name="proba", ndim=2)
@@ -99,12 +177,14 @@ def prior_by_batch(
     dtype = [
         ("batch", uniq.dtype),
         ("n_rows", np.int64),
+        ("n_effective", float),
         ("prior", float, (k,)),
         ("lower", float, (k,)),
         ("upper", float, (k,)),
         ("shift_statistic", float),
         ("shift_pvalue", float),
         ("converged", bool),
+        ("class_shift_score", float, (k,)),
     ]
     table = np.zeros(len(uniq), dtype=dtype)
     rng = check_random_state(estimator.random_state)
@@ -115,7 +195,8 @@ def prior_by_batch(
         if interval is None:
             interval = np.column_stack([res.prior, res.prior])
         table[row] = (
-            uniq[b], int(rows.sum()), res.prior, interval[:, 0], interval[:, 1],
-            res.shift_statistic, res.shift_pvalue, res.converged,
+            uniq[b], int(rows.sum()), _kish(w[rows]), res.prior, interval[:, 0],
+            interval[:, 1], res.shift_statistic, res.shift_pvalue, res.converged,
+            class_shift_scores(estimator, p[rows], w[rows]),
         )
     return table
