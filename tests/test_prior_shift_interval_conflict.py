@@ -112,3 +112,32 @@ def test_dask_rows_are_widened_as_in_memory(client):
     with pytest.warns(PriorIntervalConflictWarning):
         remote = ps.adapt(da.from_array(X_te, chunks=(600, X_te.shape[1]))).target_prior_interval_
     np.testing.assert_allclose(remote, local, atol=1e-6)
+
+
+def test_monitor_warns_once_per_call_naming_the_conflicting_batches():
+    # the digits case in batches of 150 rows: each batch's estimate, made on its own with the
+    # seed prior_by_batch draws for it, decides whether that batch conflicts; monitor must say
+    # so once for the call (it warned once per batch before), with the count and the first
+    from sklearn.utils import check_random_state
+
+    model, X_ho, y_ho, X_te, _ = _digits_case()
+    ps = PriorShiftWrapper(FrozenEstimator(model), random_state=0).fit(X_ho, y_ho)
+    est = ps.prior_estimator_
+    proba = ps._inner_output(X_te, "predict_proba")
+    rng = check_random_state(est.random_state)
+    alone = []
+    for b, start in enumerate(range(0, len(X_te), 150)):
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            est.estimate(proba[start:start + 150], random_state=rng.randint(2**31 - 1))
+        if any(issubclass(w.category, PriorIntervalConflictWarning) for w in caught):
+            alone.append(b)
+    assert len(alone) >= 3  # several batches conflict: one warning each would be noise
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        ps.monitor(X_te, batch_size=150)
+    conflict = [w for w in caught if issubclass(w.category, PriorIntervalConflictWarning)]
+    assert len(conflict) == 1
+    text = str(conflict[0].message)
+    assert f"in {len(alone)} of 10 batches" in text
+    assert f"First, batch {alone[0]}:" in text

@@ -11,6 +11,7 @@ from sklearn.utils import check_random_state
 
 from .._validation import check_proba, check_sample_weight, plain
 from ..calibration._base import rescale_extreme_weights
+from ._estimate import PriorIntervalConflictWarning
 from ._estimator import PriorEstimator, _current_source_score, _kish
 from ._shift_tests import _mean_cov, _score_rows, _score_stat_moments
 
@@ -114,6 +115,13 @@ def prior_by_batch(
         Consecutive batches of this many rows (the last one may be shorter); labelled 0, 1, ...
     sample_weight : array-like of shape (n,), default=None
 
+    Warns
+    -----
+    PriorIntervalConflictWarning
+        Once per call (more than two classes), naming how many batches had their interval
+        widened to reach the source shares and which came first; other warnings of the batch
+        estimates pass through as raised.
+
     Returns
     -------
     numpy structured array with one record per batch and fields ``batch``, ``n_rows`` (int),
@@ -188,9 +196,17 @@ def prior_by_batch(
     ]
     table = np.zeros(len(uniq), dtype=dtype)
     rng = check_random_state(estimator.random_state)
+    conflicts: list[tuple[Any, str]] = []
     for row, b in enumerate(order):
         rows = inverse.ravel() == b
-        res = estimator.estimate(p[rows], w[rows], random_state=rng.randint(2**31 - 1))
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            res = estimator.estimate(p[rows], w[rows], random_state=rng.randint(2**31 - 1))
+        for item in caught:
+            if issubclass(item.category, PriorIntervalConflictWarning):
+                conflicts.append((uniq[b], str(item.message)))
+            else:  # every other warning as it came, from the caller's line
+                warnings.warn(item.message, item.category, stacklevel=3)
         interval = res.interval
         if interval is None:
             interval = np.column_stack([res.prior, res.prior])
@@ -199,4 +215,22 @@ def prior_by_batch(
             interval[:, 1], res.shift_statistic, res.shift_pvalue, res.converged,
             class_shift_scores(estimator, p[rows], w[rows]),
         )
+    if conflicts:
+        _warn_conflicts(conflicts, len(order))
     return table
+
+
+def _warn_conflicts(conflicts: list[tuple[Any, str]], n_batches: int) -> None:
+    """One :class:`PriorIntervalConflictWarning` for the whole table (more than two classes):
+    how many batches had their interval widened, which ones first, and the first one's reason."""
+    names = ", ".join(str(c[0]) for c in conflicts[:5]) + (", ..." if len(conflicts) > 5 else "")
+    first = conflicts[0][1]
+    warnings.warn(
+        f"prior_by_batch: in {len(conflicts)} of {n_batches} batches (batch {names}) the "
+        "interval of EM's estimate excluded a source share while the shift test found no "
+        "evidence of a shift; those intervals were widened to reach the source shares, and "
+        f"their estimates are unreliable. First, batch {conflicts[0][0]}: "
+        + first[0].lower() + first[1:],
+        PriorIntervalConflictWarning,
+        stacklevel=3,
+    )
