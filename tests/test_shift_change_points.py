@@ -71,7 +71,7 @@ def _step_series(n, seed):
 
 def test_pruning_gives_the_exact_recursion_answers_with_few_run_lengths():
     # the unpruned recursion (prune_below=0) equals the brute force above; pruning at 1e-12
-    # (Adams & MacKay 2007, section 2.4) must give the same alarms, change batches and most
+    # (Adams & MacKay 2007 mention pruning; cited from memory) must give the same alarms, change batches and most
     # likely starts on 600 batches while carrying a fraction of the run lengths
     x = _step_series(600, 3)
     exact = change_point_posterior(x, 0.005, prune_below=0)

@@ -135,7 +135,7 @@ def change_point_posterior(
         ``recent_change`` at or above it raises an alarm.
     prune_below : float in [0, 1), default=1e-12
         After each batch, run lengths whose posterior probability is below this are dropped and
-        the rest renormalised (Adams & MacKay 2007, section 2.4, suggest pruning). ``0`` keeps
+        the rest renormalised (Adams & MacKay 2007 suggest pruning; cited from memory). ``0`` keeps
         every run length (the exact recursion, O(n^2) time). The mass dropped is in
         ``pruned_mass``; a warning names the batch where it exceeded 1e-6.
     stored_run_lengths : int, default=1000
@@ -248,7 +248,7 @@ def change_point_posterior(
         level_mean = (m / v + x[t] / s[t] ** 2) / prec
         level_var = 1.0 / prec
         if log_floor > -np.inf:
-            # prune run lengths of negligible posterior mass (Adams & MacKay 2007, section 2.4);
+            # prune run lengths of negligible posterior mass (Adams & MacKay 2007 mention pruning; cited from memory);
             # the dropped mass is recorded and the rest renormalised
             drop = log_joint < log_floor
             if drop.any():
