@@ -463,7 +463,8 @@ def collect_content(
         content.alarm = notes.compute(
             "batches", "prevalence alarm", batch_alarm, content.batch_table,
             content.source_prevalence, confidence_level=confidence_level,
-            labelled_rows=float(labelled_rows), expected=(ValueError,), **settings)
+            labelled_rows=float(labelled_rows), estimator=fitted, expected=(ValueError,),
+            **settings)
     E = None
     if content.applied_prevalence is not None and content.chosen_cutoff is not None:
         # moved as the wrapper moves its predictions: to the prevalence its evidence gate
