@@ -50,7 +50,7 @@ SHARED_ERROR_LIMIT = 0.1
 #: standard errors of a batch at the labelled rows' prevalence where the labelled rows are kept
 #: (baseline_batch_standard_error): the batches' own intervals are wider once the prevalence
 #: has risen, and on the demo's winter batches (twice the summer share) they put the detection
-#: of a 1.5-fold rise at 23 batches where the chart took 14.6 on average in simulation
+#: of a 1.5-fold rise at 23 batches where the chart took 15.6 on average in simulation
 #: (docs/prevalence_alarms.md, "The small-batch note").
 SLOW_DETECTION = 20.0
 
