@@ -125,13 +125,13 @@ def prior_by_batch(
     Returns
     -------
     numpy structured array with one record per batch and fields ``batch``, ``n_rows`` (int),
-    ``n_effective`` (float: Kish's effective number of rows of the batch, ``(sum w)^2 / sum
-    w^2``, the number of rows without weights; what the batch's shift test counts),
-    ``prior``, ``lower``, ``upper`` (float, shape (k,) each), ``shift_statistic``,
-    ``shift_pvalue`` (float), ``converged`` (bool) and ``class_shift_score`` (float, shape (k,):
-    the signed root of each class's one-vs-rest shift test, :func:`class_shift_scores`; roughly
-    a standard normal per batch when nothing moved, for charting one class of many). ``table["prior"][:, 1]`` is the series of
-    positive-class prevalences of a binary problem.
+    ``n_effective`` (float: Kish's effective number of rows of the batch,
+    ``(sum w)^2 / sum w^2``, the number of rows without weights; what the batch's shift test
+    counts), ``prior``, ``lower``, ``upper`` (float, shape (k,) each), ``shift_statistic``,
+    ``shift_pvalue`` (float), ``converged`` (bool) and ``class_shift_score`` (float, shape
+    (k,): the signed root of each class's one-vs-rest shift test, :func:`class_shift_scores`;
+    roughly a standard normal per batch when nothing moved, for charting one class of many).
+    ``table["prior"][:, 1]`` is the series of positive-class prevalences of a binary problem.
 
     Examples
     --------
