@@ -11,7 +11,7 @@ import numpy as np
 from sklearn.model_selection import StratifiedKFold
 from sklearn.utils import check_random_state
 
-from ._heldout import HeldOutPredictions
+from ._heldout import HeldOutPredictions, keep_cells_together
 from ._validation import plain
 from .calibration._base import CalibrationMap, WeightScaleWarning
 from .calibration._beta import BetaMap
@@ -247,6 +247,13 @@ class _AutoChoice:
                 fold[test] = i
         if np.any(fold < 0):
             raise ValueError("`cv` must partition the rows to score the candidate maps.")
+        cells = getattr(ho, "cells", None)
+        if cells is not None and isinstance(cv, numbers.Integral):
+            # counts as a success and a failure row per group: keep a group's rows in one fold
+            # (a map fitted on one of them alone is checked on the other's opposite label)
+            kept = keep_cells_together(fold, cells if rows is None else cells[rows])
+            if kept.max() >= 1:
+                fold = kept
         return fold
 
     def _auto_names(self, n_rows: int, n_maps: int = 1) -> list[str]:

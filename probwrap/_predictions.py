@@ -58,6 +58,10 @@ class HeldOutPredictions:
     from_tally: bool = False
     #: With ``from_tally``: the number of original rows of positive weight of each class.
     weighted_class_rows: np.ndarray | None = None
+    #: Cell of each row when weighted rows with identical features carry different labels
+    #: (counts expanded to a success and a failure row per group), else None: folds made on the
+    #: held-out rows keep a cell's rows together (``_heldout.feature_cells``).
+    cells: np.ndarray | None = None
 
     def class_row_counts(self, w: np.ndarray) -> np.ndarray:
         """Rows of positive weight per class (rows, not weights: the scale of the weights
