@@ -179,10 +179,12 @@ def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray)
 
             keys = pd.util.hash_pandas_object(X, index=False).to_numpy()
         elif isinstance(X, np.ndarray) and X.ndim == 2 and X.dtype.kind in "biuf":
-            rows = np.ascontiguousarray(X)
-            keys = rows.view(np.dtype((np.void, rows.dtype.itemsize * rows.shape[1]))).ravel()
+            keys = _row_hashes(X)
         else:
             return None
+        sorted_keys = np.sort(keys)
+        if not np.any(sorted_keys[1:] == sorted_keys[:-1]):
+            return None  # every row distinct: the usual case, decided without the inverse
         _, cells = np.unique(keys, return_inverse=True)
     except (TypeError, ValueError):
         return None
@@ -197,6 +199,24 @@ def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray)
     np.minimum.at(lo, cells, y_index)
     np.maximum.at(hi, cells, y_index)
     return cells if np.any(hi > lo) else None
+
+
+def _row_hashes(X: np.ndarray, block: int = 32_768) -> np.ndarray:
+    """A 64-bit hash of every row of a numeric 2-d array, block of rows by block of rows (equal
+    rows get equal hashes; unequal rows collide with a chance of about 2**-64 per pair, which
+    would only keep two rows in one fold)."""
+    n, d = X.shape
+    mult = (np.arange(d, dtype=np.uint64) * np.uint64(0x9E3779B97F4A7C15)) | np.uint64(1)
+    h = np.empty(n, dtype=np.uint64)
+    with np.errstate(over="ignore"):
+        for start in range(0, n, block):
+            bits = (np.array(X[start:start + block], dtype=np.float64) + 0.0).view(np.uint64)
+            acc = np.full(bits.shape[0], np.uint64(0xCBF29CE484222325))  # -0.0 became 0.0
+            for j in range(d):
+                acc = (acc ^ bits[:, j]) * mult[j]
+                acc ^= acc >> np.uint64(29)
+            h[start:start + block] = acc
+    return h
 
 
 def keep_cells_together(fold: np.ndarray, cells: np.ndarray) -> np.ndarray:
