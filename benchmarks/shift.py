@@ -926,10 +926,11 @@ def _share_draws(source, n_lab, n_unl, src_prior, tgt_prior, reps):
     draw. Draws of two calls with more repetitions add up (:func:`_merge_draws`)."""
     from probwrap.shift._analytic import (
         SHARE_INTERVAL_SHAPE,
-        analytic_prior_cov,
+        moment_prior_interval,
         share_interval,
     )
     from probwrap.shift._resample import _widen
+    from probwrap.shift._shift_tests import _mean_cov, _score_rows
 
     shapes = ("logit", "wilson")
     out = {"ml": []}
@@ -945,13 +946,16 @@ def _share_draws(source, n_lab, n_unl, src_prior, tgt_prior, reps):
             res = est.estimate(p_t)
         ml = res.ml_prior
         out["ml"].append(ml)
-        cov, df = analytic_prior_cov(est.calibrator_, p_t, np.ones(n_unl), float(n_unl),
-                                     est.source_prior_, ml, est._eta_cov(),
-                                     est.n_source_effective_)
+        # the default interval (since 4 December 2026): the labelled rows' class-conditional
+        # mean scores re-weighted to the shares (moment_prior_interval), in either shape
+        m_t, c_t, _ = _mean_cov(_score_rows(est.calibrate(p_t), est.source_prior_),
+                                np.ones(n_unl))
+        _, centre, cov, df = moment_prior_interval((m_t, c_t, float(n_unl)),
+                                                   est._class_score_moments(), 0.95)
         for shape in shapes:
             for level in (0.90, 0.95):
-                b = _widen(share_interval(ml, cov, level, shape, df), ml, ml, float(n_unl),
-                           level)
+                b = _widen(share_interval(centre, cov, level, shape, df), ml, ml,
+                           float(n_unl), level)
                 if res.shift_pvalue > 1.0 - level:
                     # as adapt: widened to the source shares where the test does not reject
                     # (PriorIntervalConflictWarning)

@@ -8,7 +8,9 @@ the held-out probabilities through a frozen pass-through model and adapted to th
 they are ("none") and with one seeded class's share doubled ("up") or halved ("down"), as in
 the sweep. Per size and kind: coverage of the 95 % interval of the true test shares, cells where
 adapt is more than 1.02x worse than before it (and how many of those drew no warning), misses
-without a warning, and the share of warned cells among those where adapt did no harm.
+without a warning, the share of warned cells among those where adapt did no harm, the mean
+width of the interval (over the classes) and the cells where some class's interval is all of
+[0, 1] (``PriorNotIdentifiedWarning`` from adapt).
 
 Run: nice python benchmarks/unpicked_multiclass_prior.py --tasks mc.tasks.json \
          --cache mc_prior.pkl --out mc_prior.csv
@@ -115,6 +117,8 @@ def run(cells: list) -> list:
                 n=c["n"], kind=kind, ll_before=S.ll(yte[idx], before[idx], k),
                 ll_after=S.ll(yte[idx], after, k),
                 cover=bool(np.all((iv[:, 0] <= q + 1e-9) & (q - 1e-9 <= iv[:, 1]))),
+                width=float(np.mean(iv[:, 1] - iv[:, 0])),
+                whole=bool(np.any((iv[:, 0] <= 1e-6) & (iv[:, 1] >= 1.0 - 1e-6))),
                 warned=bool(cats - {"ConvergenceWarning"}), cats=";".join(sorted(cats))))
     return rows
 
@@ -136,7 +140,8 @@ def main() -> None:
             harm = [r for r in g if r["ll_after"] > 1.02 * r["ll_before"]]
             unharmed = [r for r in g if not r["ll_after"] > 1.02 * r["ll_before"]]
             print(f"n={n:4d} {kind:5s} cells {len(g):4d}  coverage "
-                  f"{np.mean([r['cover'] for r in g]):.3f}  harm>1.02 {len(harm):3d} "
+                  f"{np.mean([r['cover'] for r in g]):.3f}  width {np.mean([r['width'] for r in g]):.3f}  "
+                  f"[0,1] {sum(r['whole'] for r in g):3d}  harm>1.02 {len(harm):3d} "
                   f"(unwarned {sum(not r['warned'] for r in harm):3d})  "
                   f"unwarned misses {sum(not r['cover'] and not r['warned'] for r in g):3d}  "
                   f"warned among unharmed {np.mean([r['warned'] for r in unharmed]):.3f}")

@@ -264,6 +264,11 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
         n_rows = total if total >= positive_rows else total**2 / squared_weight
         est._labelled_cov = labelled_cov_from_sums(cal, eta_sums, n_rows,
                                                    est.n_source_effective_)
+        # the class-conditional score moments of the default interval, as in memory, from the
+        # per-class sums the shift test's labelled side reads
+        from ..shift._analytic import class_score_moments
+
+        est._class_scores = class_score_moments((su, suu, sw, sww))
     # the labelled side of the two-sample shift test, as in memory: the plain mean of the
     # scores and its variance (probwrap.shift._shift_tests._source_moments without classes)
     est._source_score = _source_moments_from_sums(su.sum(axis=0), suu.sum(axis=0),
@@ -309,20 +314,31 @@ def _target_interval_sums(estimator, calibrator, src, prior, unit, Xb, wb):
     return target_sums(calibrator, p, w, src, prior)
 
 
-def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.0):
-    """The in-memory analytic interval (``PriorEstimator.estimate`` with more than two classes)
-    from per-block sums: the maximum-likelihood prior (EM without the shrinkage's pseudo-rows,
-    started at the shrunk estimate), then one pass for the score sums. Returns ``(ml prior,
-    interval widened to contain prior, ml interval)``."""
-    from ..shift._analytic import interval_from_sums
+def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.0,
+                       target=None):
+    """The in-memory interval (``PriorEstimator.estimate`` with more than two classes) from
+    per-block sums: the maximum-likelihood prior (EM without the shrinkage's pseudo-rows,
+    started at the shrunk estimate); then, with the labelled class moments and ``target`` (the
+    unlabelled rows' mean score, its per-row covariance and effective rows, from the shift
+    test's sums), the class-moment interval (``moment_prior_interval``), or else (an estimator
+    fitted before those were kept) one more pass for the delta-method interval's sums.
+    Returns ``(ml prior, interval widened to contain prior, ml interval)``."""
+    from ..shift._analytic import interval_from_sums, moment_prior_interval
     from ..shift._resample import _widen
 
     src = est.source_prior_
     est._warn_few_labelled(est.n_source_effective_)  # as in memory
     ml = _ml_prior(est, parts, prior, total)
-    sums = rows.map_reduce(_target_interval_sums, estimator, est.calibrator_, src, ml, unit)
-    bounds = interval_from_sums(sums, n_eff, ml, est._labelled_cov, est.confidence_level,
-                                est.n_source_effective_)[0]
+    moments = getattr(est, "_class_scores", None)
+    if moments is not None and target is not None:
+        found = moment_prior_interval(target, moments, est.confidence_level)
+        k = src.shape[0]
+        bounds = np.column_stack([np.zeros(k), np.ones(k)]) if found is None else found[0]
+    else:
+        sums = rows.map_reduce(_target_interval_sums, estimator, est.calibrator_, src, ml,
+                               unit)
+        bounds = interval_from_sums(sums, n_eff, ml, est._labelled_cov, est.confidence_level,
+                                    est.n_source_effective_)[0]
     level = est.confidence_level
     return ml, _widen(bounds, prior, ml, n_eff, level), _widen(bounds, ml, ml, n_eff, level)
 
@@ -448,8 +464,10 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             prior = point.prior
         ml = ml_interval = interval = None
         if method == "em" and getattr(est, "_labelled_cov", None) is not None:
+            t_mean = su / total
+            target = (t_mean, suu / total - np.outer(t_mean, t_mean), n_eff)
             ml, interval, ml_interval = _analytic_interval(est, estimator, rows, parts, prior,
-                                                           total, n_eff, unit)
+                                                           total, n_eff, unit, target)
         elif method == "em":
             # as in memory, every EM estimate has its maximum-likelihood prior (the evidence
             # gate's amplification below reads it)

@@ -259,6 +259,97 @@ def interval_from_sums(
     return share_interval(prior, cov, confidence_level, df=df), cov
 
 
+def class_score_sums(
+    proba: np.ndarray, y: np.ndarray, w: np.ndarray, source_prior: np.ndarray,
+) -> tuple[np.ndarray, ...]:
+    """Per-class weighted sums over labelled rows behind :func:`moment_prior_interval` (they
+    add over blocks of rows): ``(sum w u, sum w u u^T, sum w, sum w^2)`` per class, of shapes
+    ``(k, k-1)``, ``(k, k-1, k-1)``, ``(k,)``, ``(k,)``, with ``u`` the shift test's score at
+    the source prior, ``p_j / pi^s_j - p_0 / pi^s_0`` (``proba`` calibrated posteriors)."""
+    src = np.asarray(source_prior, dtype=float)
+    k = src.shape[0]
+    q = np.asarray(proba, dtype=float) / src
+    u = q[:, 1:] - q[:, :1]
+    onehot = np.eye(k)[np.asarray(y, dtype=int)] * np.asarray(w, dtype=float)[:, None]
+    return (onehot.T @ u, np.einsum("nc,ni,nj->cij", onehot, u, u), onehot.sum(axis=0),
+            (onehot * np.asarray(w, dtype=float)[:, None]).sum(axis=0))
+
+
+def class_score_moments(
+    sums: tuple[np.ndarray, ...], n_source: float | None = None,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per-class mean score, per-row covariance of the score and effective rows from
+    :func:`class_score_sums`: Kish's count of each class, or ``n_source`` (an overriding
+    effective number of labelled rows) times the class's weight share."""
+    su, suu, sw, sww = (np.asarray(x, dtype=float) for x in sums)
+    safe = np.maximum(sw, np.finfo(float).tiny)
+    means = su / safe[:, None]
+    covs = suu / safe[:, None, None] - np.einsum("ci,cj->cij", means, means)
+    if n_source:
+        n_c = float(n_source) * sw / sw.sum()
+    else:
+        n_c = sw**2 / np.maximum(sww, np.finfo(float).tiny)
+    return means, covs, n_c
+
+
+def moment_prior_interval(
+    target: tuple, class_moments: tuple, confidence_level: float,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None:
+    r"""Interval of the class shares from the labelled rows' class-conditional mean scores
+    (more than two classes; the default multiclass interval since 4 December 2026).
+
+    Under a prior shift to :math:`\pi` every function of the features has the same mean on the
+    unlabelled rows as on the labelled rows re-weighted by :math:`\pi_y / \pi^s_y` (Lipton,
+    Wang & Smola 2018, section 2) — whatever the calibration map, so a map that misfits the
+    labelled population moves nothing here. Taking the shift test's score ``u`` (at the source
+    prior, ``k - 1`` values per row), the unlabelled mean :math:`\bar u_t` is estimated by
+    :math:`\sum_y \pi_y \bar u_y` with :math:`\bar u_y` the labelled mean of class ``y``; the
+    ``k - 1`` equations :math:`\bar u_t = \bar u_0 + \sum_{c \ge 1} \pi_c (\bar u_c -
+    \bar u_0)` give :math:`\tilde\pi = B^{-1}(\bar u_t - \bar u_0)` (the probabilistic
+    adjusted count of Bella et al. 2010 on the score's coordinates), and the delta method its
+    covariance :math:`B^{-1}(S_t / (n_t - 1) + \sum_y \pi_y^2 S_y / (n_y - 1))B^{-\top}` —
+    the unlabelled rows' and each class's labelled rows' sampling error, with Student's t on
+    Satterthwaite's (1946) degrees of freedom of these ``k + 1`` parts and the Wilson shape of
+    :func:`share_interval` around :math:`\tilde\pi` (clipped to the simplex). It is the
+    multiclass counterpart of the two-class score interval (:func:`probwrap.shift.
+    score_interval`), in its Wald form. The delta-method interval on EM's fixed point
+    (:func:`analytic_prior_interval`) assumes the calibrated posteriors are right on the
+    unlabelled rows; a map fitted on a few hundred rows errs slightly there and EM amplifies
+    that beyond the interval (docs/prior_shift.md, *Interval against the test*).
+
+    ``target``: ``(mean, per-row covariance, effective rows)`` of the unlabelled rows' scores
+    (as the shift test computes them); ``class_moments``: :func:`class_score_moments`.
+    Returns ``(interval (k, 2), centre (k,), covariance (k, k), degrees of freedom (k,))``, or
+    None where the class means do not identify the shares (``B`` singular).
+    """
+    m_t, c_t, n_t = target
+    means, covs, n_c = class_moments
+    k = means.shape[0]
+    b = (means[1:] - means[:1]).T  # column c - 1: how the mean score moves with share c
+    try:
+        b_inv = np.linalg.inv(b)
+    except np.linalg.LinAlgError:
+        return None
+    if not np.all(np.isfinite(b_inv)):
+        return None
+    free = b_inv @ (np.asarray(m_t, dtype=float) - means[0])
+    pi = np.concatenate([[1.0 - free.sum()], free])
+    centre = np.clip(pi, 0.0, None)
+    centre = centre / centre.sum() if centre.sum() > 0 else np.full(k, 1.0 / k)
+    t = np.vstack([-np.ones((1, k - 1)), np.eye(k - 1)])  # share 0: one minus the others
+    lift = t @ b_inv
+    n_t = max(float(n_t), 1.0)
+    parts = [lift @ (np.asarray(c_t, dtype=float) / max(n_t - 1.0, 1.0)) @ lift.T]
+    dofs = [max(n_t - 1.0, 1.0)]
+    for y in range(k):
+        dof = max(float(n_c[y]) - 1.0, 1.0)
+        parts.append(lift @ (centre[y] ** 2 * covs[y] / dof) @ lift.T)
+        dofs.append(dof)
+    cov = sum(parts)
+    df = satterthwaite_df([np.diag(v) for v in parts], dofs)
+    return share_interval(centre, cov, confidence_level, df=df), centre, cov, df
+
+
 #: Shape of the per-share interval of :func:`share_interval` used by default.
 SHARE_INTERVAL_SHAPE = "wilson"
 

@@ -15,7 +15,13 @@ from sklearn.utils import check_random_state
 
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ..calibration._base import rescale_extreme_weights
-from ._analytic import analytic_prior_interval, labelled_parameter_cov
+from ._analytic import (
+    analytic_prior_interval,
+    class_score_moments,
+    class_score_sums,
+    labelled_parameter_cov,
+    moment_prior_interval,
+)
 from ._calibration import BiasCorrectedScaling, choose_tail, tail_log_scores
 from ._confusion import acc_prior, bbse_prior, heldout_confusion
 from ._estimate import (
@@ -258,6 +264,12 @@ class PriorEstimator(_Resampling):
             labelled_parameter_cov(self.calibrator_, p, y_idx, w, self.source_prior_,
                                    self.n_source_effective_) if k > 2 else None
         )
+        # and the labelled rows' class-conditional score moments behind the default interval
+        # (moment_prior_interval): k small matrices
+        self._class_scores = (
+            class_score_moments(class_score_sums(p_cal, y_idx, w, self.source_prior_),
+                                effective_rows) if k > 2 else None
+        )
         return self
 
     def _summarise(
@@ -318,6 +330,19 @@ class PriorEstimator(_Resampling):
                                              self.source_prior_, self.n_source_effective_)
                 self._labelled_cov = cov
         return cov
+
+    def _class_score_moments(self) -> tuple | None:
+        """The labelled rows' class-conditional score moments of the default multiclass
+        interval (computed from the kept rows for an estimator fitted before they were stored;
+        None for two classes or without them)."""
+        moments = getattr(self, "_class_scores", None)
+        if moments is None and self.n_classes_ > 2:
+            src = self._source_rows()
+            if src is not None and self._source_row_counts() is None:
+                moments = class_score_moments(class_score_sums(
+                    self.calibrate(src[0]), src[1], src[2], self.source_prior_))
+                self._class_scores = moments
+        return moments
 
     def _names(self) -> tuple | None:
         """Labels of the classes for messages (None: by column index)."""
@@ -503,9 +528,21 @@ class PriorEstimator(_Resampling):
                     ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
             elif getattr(self, "interval", "score") == "score" and ml is not None and (
+                    self._class_score_moments() is not None):
+                # more than two classes: the labelled rows' class-conditional mean scores
+                # re-weighted to the shares (moment_prior_interval); the delta method on EM's
+                # fixed point missed under real shifts where the calibration errs on new rows
+                found = moment_prior_interval((m_t, c_t, n_eff), self._class_score_moments(),
+                                              self.confidence_level)
+                bounds = (np.column_stack([np.zeros(k), np.ones(k)]) if found is None
+                          else found[0])
+                ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
+                bounds = _widen(bounds, point.prior, ml, n_eff, self.confidence_level)
+            elif getattr(self, "interval", "score") == "score" and ml is not None and (
                     self._eta_cov() is not None):
-                # more than two classes: the delta method on the EM fixed point, with the
-                # labelled rows' error through the calibration and the source prior
+                # an estimator fitted before the class moments were kept, without its rows:
+                # the delta method on the EM fixed point, with the labelled rows' error
+                # through the calibration and the source prior
                 bounds = analytic_prior_interval(
                     self.calibrator_, p_raw, w, n_eff, src, ml, self._eta_cov(),
                     self.confidence_level, n_source=n_src,
