@@ -110,12 +110,13 @@ class PriorIntervalConflictWarning(UserWarning):
     """More than two classes: the interval of the class priors excluded the source prior
     while the shift test found no evidence of a shift at the same level.
 
-    The delta-method interval on EM's fixed point and the two-sample score test answer the same
-    question from the same rows; when they disagree, EM's estimate has moved further from the
-    source prior than the evidence supports (a calibration fitted on a few hundred labelled
-    rows, whose small errors on new rows EM amplifies). The score test holds its level (on the
-    multiclass sweep's unshifted cells it rejected at 0-3 % at level 5 %), so ``adapt`` widens
-    the interval to reach the source prior and warns."""
+    The interval (since 4 December 2026 the class-moment interval, widened to contain EM's
+    estimate; before, the delta method on EM's fixed point) and the two-sample score test
+    answer the same question from the same rows; when they disagree, EM's estimate has moved
+    further from the source prior than the evidence supports (a calibration fitted on a few
+    hundred labelled rows, whose small errors on new rows EM amplifies). The score test holds
+    its level (on the multiclass sweep's unshifted cells it rejected at 0-3 % at level 5 %),
+    so ``adapt`` widens the interval to reach the source prior and warns."""
 
 
 class FewLabelledRowsWarning(UserWarning):
