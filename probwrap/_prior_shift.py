@@ -161,9 +161,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         reacts to it, gets a high cutoff. None: ``c = min_evidence``.
     interval : {"score", "bca", "percentile"}, default="score"
         How ``target_prior_interval_`` is built: ``"score"`` — the inverted two-sample score
-        test (two classes), or for more classes with ``method="em"`` the delta method on the
-        EM fixed point with the labelled rows' error (calibration and source prior) stacked in
-        (no resampling either way) — or a BCa / percentile bootstrap of ``n_resamples``
+        test (two classes), or for more classes with ``method="em"`` the class-moment
+        interval: the labelled rows' class means of the shift test's score re-weighted to the
+        shares, which holds whatever the calibration map (no resampling either way; before 4
+        December 2026 the delta method on the EM fixed point) — or a BCa / percentile
+        bootstrap of ``n_resamples``
         Poisson resamples of both samples (see :class:`probwrap.shift.PriorEstimator`).
     cv : int, splitter or iterable, default=5
         Cross-fitting folds (ignored for a frozen estimator).

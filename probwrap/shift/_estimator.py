@@ -115,10 +115,13 @@ class PriorEstimator(_Resampling):
     interval : {"score", "bca", "percentile"}, default="score"
         ``"score"``: for two classes, the inverted two-sample score test
         (:func:`score_interval`; no resampling, both samples' error included, honest at the
-        edges); for more classes with ``method="em"`` the delta-method interval (Wilson shape) on
-        the EM fixed point, whose variance stacks the unlabelled rows' score with the labelled
-        rows' estimating equations of the calibration and the source prior (the M-estimator
-        sandwich; no resampling); other multiclass methods fall back to ``"bca"``. ``"bca"``:
+        edges); for more classes with ``method="em"`` the class-moment interval (Wilson shape;
+        ``probwrap.shift._analytic.moment_prior_interval``): the shares that make the labelled
+        rows' class means of the shift test's score, re-weighted, reproduce the unlabelled
+        rows' mean, with both samples' error and no resampling, valid whatever the calibration
+        map (before 4 December 2026, and still for an estimator fitted earlier without its
+        rows, the delta-method interval on the EM fixed point); other multiclass methods fall
+        back to ``"bca"``. ``"bca"``:
         bias-corrected and
         accelerated bootstrap interval (Efron 1987; acceleration from a grouped jackknife over
         both samples) over ``n_resamples`` Poisson resamples of both samples.
@@ -590,9 +593,9 @@ class PriorEstimator(_Resampling):
         shift test does not reject "no shift" at the interval's level, so that it reaches the
         source prior, and warn (:class:`PriorIntervalConflictWarning`).
 
-        Both read the same rows; the score test holds its level where EM's delta-method
-        interval does not (EM amplifies small calibration errors on new rows), so the widened
-        interval covers the unchanged shares whenever the test accepts them.
+        Both read the same rows; the score test holds its level where an interval widened to
+        contain EM's estimate may not (EM amplifies small calibration errors on new rows), so
+        the widened interval covers the unchanged shares whenever the test accepts them.
         """
         src = self.source_prior_
         alpha = 1.0 - float(self.confidence_level)
