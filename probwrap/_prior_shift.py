@@ -518,7 +518,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # the workers (one pass per EM iteration); with the analytic interval (EM).
             from .scale._entry import estimate_multiclass_target
 
-            res = estimate_multiclass_target(est, self.estimator_, X, sample_weight)
+            res = estimate_multiclass_target(est, self.estimator_, X, sample_weight, rs)
             return self._finish_adapt(res, res.interval)
         if _is_dask(X) or _is_dask(sample_weight):
             # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is

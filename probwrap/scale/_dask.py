@@ -267,11 +267,12 @@ def _block_tally(
 
     y_index = None if yb is None else block_label_index(classes, yb)
     width = None if response == "decision_function" else classes.shape[0]
-    s = _binary_scores(predict_block(estimator, response, Xb, width), response)
+    outputs = predict_block(estimator, response, Xb, width)
+    s = _binary_scores(outputs, response)
     if wb is not None and hasattr(wb, "to_numpy"):  # a pandas Series (nullable: NaN for NA)
         wb = wb.to_numpy(dtype=float, na_value=np.nan)
     return _tally_block(
-        s, y_index, wb, 2 if yb is not None else 1, resolution, n_replicates, seed
+        s, y_index, wb, 2 if yb is not None else 1, resolution, n_replicates, seed, outputs
     )
 
 
@@ -336,17 +337,25 @@ def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, respo
             "`y` contains only 1 class (with positive weight); the held-out rows must contain "
             "at least two classes."
         )
-    scores, y_index, w = tally.to_rows()
-    values = scores if response == "decision_function" else np.column_stack(
-        [_expit(-scores), _expit(scores)]
-    )
+    owner.tally_ = tally
+    kept = kept_rows_of(tally)
+    if kept is not None:
+        # a small set: the rows themselves, so the fit is the in-memory fit of the same rows
+        # (see probwrap.scale._tally.KEPT_ROWS)
+        values, y_index, w = kept
+        from_tally = False
+    else:
+        scores, y_index, w = tally.to_rows()
+        values = scores if response == "decision_function" else np.column_stack(
+            [_expit(-scores), _expit(scores)]
+        )
+        from_tally = True
     owner.estimator_ = estimator
     owner.classes_ = classes
     if hasattr(estimator, "n_features_in_"):
         owner.n_features_in_ = estimator.n_features_in_
     if hasattr(estimator, "feature_names_in_"):
         owner.feature_names_in_ = estimator.feature_names_in_
-    owner.tally_ = tally
     return HeldOutPredictions(
         values=values,
         response=response,
@@ -356,9 +365,24 @@ def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, respo
         fold=np.full(y_index.shape[0], -1, dtype=int),
         n_folds=0,
         estimator=estimator,
-        from_tally=True,
+        from_tally=from_tally,
         weighted_class_rows=tally.weighted_rows_by_label,
     )
+
+
+def kept_rows_of(tally: ScoreTally) -> tuple | None:
+    """``(outputs, label indices or None, weights)`` of a tally's kept rows (None if it has
+    none): the weights divided by the tally's power-of-two unit, as the in-memory path divides
+    weights far from 1 (``rescale_extreme_weights``), and unit weights when none were given."""
+    kept = tally.kept_rows
+    if kept is None or kept[0].shape[0] != tally.n_rows:
+        return None
+    values, labels, weights = kept
+    if weights is None:
+        w = np.ones(tally.n_rows)
+    else:
+        w = weights / tally.weight_unit if tally.weight_unit != 1.0 else weights
+    return values, labels, w
 
 
 def _expit(x: np.ndarray) -> np.ndarray:

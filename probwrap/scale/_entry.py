@@ -81,8 +81,9 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     return _multiclass.fit_multiclass_source(owner, X, y, sample_weight)
 
 
-def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None):
-    return _multiclass.estimate_multiclass_target(est, estimator, X, sample_weight)
+def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None,
+                               random_state: Any = None):
+    return _multiclass.estimate_multiclass_target(est, estimator, X, sample_weight, random_state)
 
 
 def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, template: Any):

@@ -42,7 +42,7 @@ from ._blocks import (
 from ._dask import _frozen_multiclass
 from ._multiclass_wrappers import _Smallest
 from ._rows import in_weight_unit, rows_of
-from ._tally import ZERO_WEIGHT, warn_weight_unit
+from ._tally import KEPT_ROWS, ZERO_WEIGHT, warn_weight_unit
 
 __all__ = ["fit_multiclass_source", "estimate_multiclass_target"]
 
@@ -68,6 +68,30 @@ def _target_block(estimator, calibrator, Xb, wb):
     if calibrator is not None:
         p = calibrator.predict(p)
     return p, w
+
+
+# -- small sets: the rows themselves ---------------------------------------------------------
+class _KeptRows:
+    """Arrays of the rows of blocks, concatenated in block order by ``+`` (the reduction)."""
+
+    def __init__(self, *arrays: np.ndarray) -> None:
+        self.arrays = arrays
+
+    def __add__(self, other: _KeptRows) -> _KeptRows:
+        return _KeptRows(*(np.concatenate([a, b]) for a, b in zip(self.arrays, other.arrays,
+                                                                   strict=True)))
+
+
+def _kept_source(block):
+    """The model's posteriors, label indices and weights of a kept labelled block."""
+    p, _, y, w = block
+    return _KeptRows(p, y, w)
+
+
+def _kept_target(estimator, Xb, wb):
+    """The model's own posteriors and the weights of a block of unlabelled rows."""
+    p = predict_block(estimator, "predict_proba", Xb, len(estimator.classes_))
+    return _KeptRows(p, block_weights(wb, p.shape[0]))
 
 
 # -- source side ------------------------------------------------------------------------------
@@ -184,6 +208,21 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             )
         owner.classes_ = classes  # (set again below) for the warning about classes of few rows
         owner._warn_few_class_rows(np.asarray(weighted, dtype=np.int64))
+        if float(np.sum(rows)) <= KEPT_ROWS:
+            # a small set (KEPT_ROWS): the posteriors come to the client and the in-memory fit
+            # runs on them — the tail choice on at most 200 labelled rows, the calibration's
+            # count of rows for weights summing to fewer than the rows — so the result is the
+            # in-memory one (the weights already divided by the unit, as in memory)
+            p, y_idx, w = parts.reduce(_kept_source).arrays
+            est = PriorEstimator(
+                owner.method, calibration=owner.calibration, tol=owner.em_tol,
+                max_iter=owner.em_max_iter, n_resamples=owner.n_resamples,
+                confidence_level=owner.confidence_level, random_state=owner.random_state,
+                prior_strength=owner.prior_strength, interval=owner.interval,
+            )
+            est.fit(p, y_idx, w, class_names=classes)
+            _set_fitted(owner, estimator, classes)
+            return est
         est = PriorEstimator(
             owner.method, calibration=owner.calibration, tol=owner.em_tol,
             max_iter=owner.em_max_iter,
@@ -273,13 +312,17 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     # scores and its variance (probwrap.shift._shift_tests._source_moments without classes)
     est._source_score = _source_moments_from_sums(su.sum(axis=0), suu.sum(axis=0),
                                                   float(sw.sum()), float(sww.sum()))
+    _set_fitted(owner, estimator, classes)
+    return est
+
+
+def _set_fitted(owner: Any, estimator: Any, classes: np.ndarray) -> None:
     owner.estimator_ = estimator
     owner.classes_ = classes
     if hasattr(estimator, "n_features_in_"):
         owner.n_features_in_ = estimator.n_features_in_
     if hasattr(estimator, "feature_names_in_"):
         owner.feature_names_in_ = estimator.feature_names_in_
-    return est
 
 
 # -- the analytic interval (more than two classes, method="em") -------------------------------
@@ -413,7 +456,8 @@ def _em_dask(parts, src, init, total, tol, max_iter, pseudo=None, scale=1.0):
     return accelerated_em(em_map, init.copy(), tol, max_iter)
 
 
-def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None):
+def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None,
+                               random_state: Any = None):
     """Prior estimate (a :class:`probwrap.shift.PriorEstimate`) of unlabelled multiclass Dask or
     Spark rows.
 
@@ -433,6 +477,15 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         if total <= 0:
             raise ValueError(ZERO_WEIGHT)
         warn_weight_unit(unit, "PriorShiftWrapper.adapt", total, stacklevel=5)
+        if n_rows <= KEPT_ROWS:
+            # a small set (KEPT_ROWS): the model's posteriors come to the client (one more
+            # pass, predicting again: the kept blocks hold calibrated ones) and the in-memory
+            # estimate runs on them, as adapt does in memory
+            p, w = rows.map_reduce(_kept_target, estimator).arrays
+            if unit != 1.0:
+                w = w / unit
+            return est.estimate(p, None if sample_weight is None else w,
+                                random_state=random_state)
         src = est.source_prior_
         method = est.method
         n_iter, converged, distance = 0, True, 0.0

@@ -194,5 +194,12 @@ def unlabelled_proba_from_rows(
     if tally.total_weight <= 0:
         raise ValueError(ZERO_WEIGHT)
     warn_weight_unit(tally.weight_unit, owner, tally.total_weight, stacklevel=5)
+    from ._dask import kept_rows_of
+
+    kept = kept_rows_of(tally)
+    if kept is not None:
+        # a small set: the rows' own probabilities, as in memory (no tally: ``None``)
+        proba, _, w = kept
+        return proba, (None if tally.kept_rows[2] is None else w), None
     proba, w = tally.to_scores(proba=True)
     return proba, w, tally

@@ -238,8 +238,11 @@ def _tally_partitions(
             s = np.concatenate([h[0] for h in held])
             y = None if held[0][1] is None else np.concatenate([h[1] for h in held])
             w = None if held[0][2] is None else np.concatenate([h[2] for h in held])
+            # the model's own outputs (tallies of a model: _convert_model), kept for small sets
+            out = None if len(held[0]) < 4 else np.concatenate([h[3] for h in held])
             return _tally_block(
-                s, y, w, labelled_cols, resolution, n_replicates, [seed, stream, part, chunk]
+                s, y, w, labelled_cols, resolution, n_replicates, [seed, stream, part, chunk],
+                out,
             )
 
         try:
@@ -342,10 +345,11 @@ def _convert_model(pdf: Any, spec: tuple) -> tuple:
     from ._dask import _binary_scores
 
     estimator, response, classes, features, named, label, weight = spec
-    s = _binary_scores(getattr(estimator, response)(_features(pdf, features, named)), response)
+    outputs = np.asarray(getattr(estimator, response)(_features(pdf, features, named)), dtype=float)
+    s = _binary_scores(outputs, response)
     y = None if label is None else _label_index(classes, pdf[label].to_numpy())
     w = None if weight is None else pdf[weight].to_numpy(dtype=float, na_value=np.nan)
-    return s, y, w
+    return s, y, w, outputs
 
 
 def spark_tally_of_model(

@@ -37,6 +37,19 @@ DEFAULT_RESOLUTION = 1e-3
 # Largest |score / resolution| that still fits comfortably into int64 bin indices.
 _MAX_INDEX = 2.0**62
 
+#: A tally of a model's outputs on at most this many rows (the wrappers' Dask and Spark paths)
+#: also keeps the rows themselves — the model's output, label index and weight of each row, in
+#: block order — as :attr:`ScoreTally.kept_rows`, and the wrappers then fit on those rows exactly
+#: as in memory. The fits of the tally's bins are fits to binned data, and the in-memory path's
+#: safeguards for small held-out sets need the rows: the tail choice on at most 200 labelled rows
+#: (probwrap.shift._calibration.TAIL_CHOICE_MAX_ROWS), the recalibrated anchor of a tuned cutoff,
+#: ``method="auto"``'s cross-validation over rows, and counts of rows for weights that sum to
+#: less than the rows; a bin of a small tally often holds rows of both classes or of different
+#: weights. Equal to the in-memory wrappers' own limit for keeping held-out rows
+#: (probwrap._cost_policy_summary.SMALL_HELDOUT_ROWS; a test checks that they agree): a few
+#: hundred kilobytes to the client at most.
+KEPT_ROWS = 20_000
+
 def _exponent(unit: float) -> int:
     return math.frexp(unit)[1] - 1
 
@@ -165,6 +178,11 @@ class ScoreTally:
     >>> s.round(4).tolist(), y.tolist(), w.tolist()
     ([0.0002, 0.0002, 1.0], [0, 1, 1], [1.0, 1.0, 1.0])
     """
+
+    #: ``(outputs, label indices or None, weights as given or None)`` of every row, in block
+    #: order, when the tally was built from a model's outputs on at most :data:`KEPT_ROWS` rows
+    #: (by the wrappers' Dask and Spark paths); None otherwise.
+    kept_rows: tuple | None = None
 
     def __init__(
         self,
@@ -403,11 +421,13 @@ class ScoreTally:
             if a.squared_weight is None or b.squared_weight is None
             else a.squared_weight + b.squared_weight
         )
-        return ScoreTally(
+        out = ScoreTally(
             uniq, merged, sums, self.resolution, self.n_rows + other.n_rows, self.labelled,
             reps, sq, unit, _add_counts(self.rows_by_label, other.rows_by_label),
             _add_counts(self.weighted_rows_by_label, other.weighted_rows_by_label),
         )
+        out.kept_rows = _merge_kept(self, other)
+        return out
 
     def _in_unit(self, unit: float) -> ScoreTally:
         """This tally with its weights expressed in ``unit`` (a power of two not below its own);
@@ -436,6 +456,26 @@ class ScoreTally:
         )
 
 
+def _merge_kept(a: ScoreTally, b: ScoreTally) -> tuple | None:
+    """The kept rows of ``a`` followed by those of ``b`` (None once they exceed KEPT_ROWS)."""
+    ka, kb = a.kept_rows, b.kept_rows
+    if ka is None or kb is None or a.n_rows + b.n_rows > KEPT_ROWS:
+        return None
+    if a.n_rows == 0:
+        return kb
+    if b.n_rows == 0:
+        return ka
+    values = np.concatenate([ka[0], kb[0]])
+    labels = None if ka[1] is None or kb[1] is None else np.concatenate([ka[1], kb[1]])
+    weights = None
+    if ka[2] is not None or kb[2] is not None:
+        weights = np.concatenate([
+            np.ones(a.n_rows) if ka[2] is None else ka[2],
+            np.ones(b.n_rows) if kb[2] is None else kb[2],
+        ])
+    return values, labels, weights
+
+
 def _add_counts(a: np.ndarray | None, b: np.ndarray | None) -> np.ndarray | None:
     return None if a is None or b is None else a + b
 
@@ -452,8 +492,13 @@ def _tally_block(
     resolution: float,
     n_replicates: int = 0,
     seed: Any = None,
+    outputs: Any = None,
 ) -> ScoreTally:
     """Tally of one in-memory block (validated).
+
+    ``outputs``: the model's outputs of the block's rows (from which ``scores`` were computed);
+    kept with the labels and weights as ``kept_rows`` when the block has at most
+    :data:`KEPT_ROWS` rows.
 
     With ``n_replicates > 0`` it also holds Poisson-bootstrap replicate counts; the Poisson(1)
     draws of the block's rows come from ``numpy.random.default_rng(seed)``, so they depend only
@@ -464,12 +509,15 @@ def _tally_block(
     n = s.shape[0]
     cols_out = n_labels if y is not None else 1
     if n == 0:
-        return ScoreTally(
+        empty = ScoreTally(
             np.empty(0, np.int64), np.empty((0, cols_out)), np.empty(0), resolution, 0,
             y is not None,
             np.empty((n_replicates, 0, cols_out)) if n_replicates else None,
             0.0, 1.0, np.zeros(cols_out, np.int64), np.zeros(cols_out, np.int64),
         )
+        if outputs is not None:
+            empty.kept_rows = (np.asarray(outputs, dtype=float), None, None)
+        return empty
     if y is not None:
         y_arr = np.asarray(y)
         check_same_length(("scores", s), ("y", y_arr))
@@ -540,10 +588,17 @@ def _tally_block(
     else:
         rows = np.bincount(labels_of, minlength=cols)
         weighted = rows if w.min() > 0 else np.bincount(labels_of[w > 0], minlength=cols)
-    return ScoreTally(
+    out = ScoreTally(
         bins, counts[occupied], sums[occupied], resolution, n, y is not None, reps,
         float(np.dot(w, w)), unit, rows, weighted,
     )
+    if outputs is not None and n <= KEPT_ROWS:
+        out.kept_rows = (
+            np.asarray(outputs, dtype=float),
+            None if y is None else y_arr.astype(np.int64),
+            None if sample_weight is None else np.asarray(sample_weight, dtype=float),
+        )
+    return out
 
 
 def merge_tallies(tallies: Any) -> ScoreTally:
