@@ -61,6 +61,7 @@ SLOW_TESTS = (
 XDIST_GROUPS = {
     "tests/test_spark_scale.py::": "spark",
     "tests/test_spark_multiclass.py::": "spark",
+    "tests/test_spark_small_sets.py::": "spark",
 }
 
 
