@@ -18,6 +18,7 @@ from ._heldout import (
     _multiclass_dask,
     check_fitted,
 )
+from ._predictions import HeldOutPredictions
 from ._validation import plain
 from .calibration._base import (
     CalibrationMap,
@@ -244,6 +245,10 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         if _multiclass_dask(self.estimator, X, y, sample_weight):
             return self._fit_multiclass_dask(X, y, sample_weight)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
+        return self._fit_on_heldout(ho)
+
+    def _fit_on_heldout(self, ho: Any) -> CalibrationWrapper:
+        """The calibration map (and ``method="auto"``'s choice) on held-out predictions."""
         self.response_ = ho.response
         self.clip_ = self._choose_clip(ho.values, ho.sample_weight)
         scores = self._to_scores(ho.values)
@@ -334,13 +339,16 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             self.method_ = type(self.method).__name__
             template = self.method
         elif self.method == "auto":
-            raise ValueError(
-                "method='auto' is not supported for multiclass Dask input; name the method."
-            )
+            template = None  # allowed on small sets (fitted as in memory), refused below
         else:
             self.method_ = self.method
             template = CALIBRATION_METHODS[self.method]()
-        self.calibrator_ = fit_multiclass_calibration(self, X, y, sample_weight, template)
+        fitted = fit_multiclass_calibration(self, X, y, sample_weight, template)
+        if isinstance(fitted, HeldOutPredictions):
+            # a small set (at most probwrap.scale._tally.KEPT_ROWS rows): its rows came to the
+            # client, so the map is the in-memory fit of the same rows
+            return self._fit_on_heldout(fitted)
+        self.calibrator_ = fitted
         return self
 
     def _check_method(self) -> None:

@@ -194,3 +194,25 @@ def test_multiclass_adapt_on_dask_after_an_in_memory_fit(wine):
     np.testing.assert_allclose(dsk.target_prior_, mem.target_prior_, rtol=0, atol=1e-12)
     np.testing.assert_allclose(dsk.target_prior_interval_, mem.target_prior_interval_, rtol=0,
                                atol=1e-12)
+
+
+@pytest.mark.parametrize("method", ["temperature", "isotonic", "auto"])
+def test_multiclass_calibration_on_dask_is_the_in_memory_fit(wine, method):
+    X, y, X_new, model, w = wine
+    mem, mem_warn = _run(lambda: CalibrationWrapper(model, method=method, random_state=0).fit(
+        X, y, sample_weight=w))
+    dsk, dsk_warn = _run(lambda: CalibrationWrapper(model, method=method, random_state=0).fit(
+        _dask(X), _dask(y), sample_weight=_dask(w)))
+    assert dsk.method_ == mem.method_
+    np.testing.assert_allclose(dsk.predict_proba(X_new), mem.predict_proba(X_new), rtol=0,
+                               atol=1e-12)
+    # before: no warning on Dask that weights summing to 1 are rescaled to Kish's size, and
+    # method="auto" refused
+    assert dsk_warn == mem_warn
+    assert any(c == "WeightScaleWarning" and "Kish" in m for c, m in dsk_warn)
+
+
+def test_multiclass_auto_is_still_refused_beyond_the_kept_rows(wine):
+    X, y, _, model, _ = wine
+    with pytest.raises(ValueError, match="method='auto' is not supported for multiclass Dask"):
+        CalibrationWrapper(model, method="auto", clip=1e-6).fit(_dask(X), _dask(y))

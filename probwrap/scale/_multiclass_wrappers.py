@@ -54,13 +54,40 @@ class _Smallest:
         return _Smallest(min(self.value, other.value))
 
 
-def _smallest_positive_block(owner, Xb, yb, wb):
-    """Smallest non-zero probability of the rows of positive weight (inf when none)."""
+class _Capped:
+    """A block's model outputs, label indices and weights, concatenated in block order by
+    ``+`` while the rows number at most KEPT_ROWS (beyond: only the count and the smallest
+    positive probability travel on)."""
+
+    def __init__(self, n: int, smallest: float, arrays: tuple | None) -> None:
+        self.n = n
+        self.smallest = smallest
+        self.arrays = arrays
+
+    def __add__(self, other: _Capped) -> _Capped:
+        from ._tally import KEPT_ROWS
+
+        n = self.n + other.n
+        arrays = None
+        if self.arrays is not None and other.arrays is not None and n <= KEPT_ROWS:
+            arrays = tuple(np.concatenate([a, b]) for a, b in zip(self.arrays, other.arrays,
+                                                                  strict=True))
+        return _Capped(n, min(self.smallest, other.smallest), arrays)
+
+
+def _first_pass_block(owner, Xb, yb, wb):
+    """The rows of a block (while few: see :class:`_Capped`) and the smallest non-zero
+    probability of its rows of positive weight."""
+    from ._tally import KEPT_ROWS
+
     values = predict_block(owner.estimator_, owner.response_, Xb, owner.classes_.shape[0])
+    y = _label_index(owner.classes_, yb)
     w = _weights(wb, values.shape[0])
     v = values[w > 0]
     v = v[v > 0]
-    return _Smallest(float(v.min()) if v.size else np.inf)
+    n = values.shape[0]
+    return _Capped(n, float(v.min()) if v.size else np.inf,
+                   (values, y, w) if n <= KEPT_ROWS else None)
 
 
 def _temperature_terms(block, log_beta, total, counts=None):
@@ -136,11 +163,21 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
         owner.feature_names_in_ = estimator.feature_names_in_
     rows = rows_of(X, y, sample_weight, estimator)
     if owner.clip is None and owner.response_ == "predict_proba":
-        # clip_ from the data as in memory (CalibrationWrapper._choose_clip): one pass
-        smallest = rows.map_reduce(_smallest_positive_block, owner).value
-        owner.clip_ = owner._clip_from_smallest(smallest)
+        # clip_ from the data as in memory (CalibrationWrapper._choose_clip): one pass, which
+        # also brings the rows of a small set (at most KEPT_ROWS) to the client
+        first = rows.map_reduce(_first_pass_block, owner)
+        if first.arrays is not None and first.n > 0:
+            return _small_set_heldout(owner, estimator, classes, first.arrays,
+                                      sample_weight is not None)
+        owner.clip_ = owner._clip_from_smallest(first.smallest)
     else:
         owner.clip_ = owner._choose_clip(np.empty((0, k)), np.empty(0))
+    if template is None:
+        raise ValueError(
+            "method='auto' is not supported for multiclass Dask input beyond "
+            "20,000 rows of a model's predict_proba (it scores candidate maps by "
+            "cross-validation over the rows); name the method."
+        )
     if isinstance(template, TemperatureMap):
         parts = rows.persist(_wrapper_scores_block, owner, template)
         try:
@@ -265,6 +302,27 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
         )
     owner.tally_ = list(merged)
     return maps
+
+
+def _small_set_heldout(owner, estimator, classes, arrays, weighted):
+    """The held-out predictions of a small multiclass set, as the in-memory path makes them for
+    a frozen model (the checks of the classes and weights with the in-memory messages)."""
+    from .._predictions import HeldOutPredictions
+    from ..calibration._base import rescale_extreme_weights
+
+    values, y, w = arrays
+    k = classes.shape[0]
+    rows, positive = class_rows(y, w, k)
+    if float(w.sum()) <= 0:
+        raise ValueError(ZERO_WEIGHT)
+    check_class_rows(owner, classes, rows, positive)
+    if weighted:
+        w = rescale_extreme_weights(w, type(owner).__name__, stacklevel=7)
+    return HeldOutPredictions(
+        values=values, response=owner.response_, classes=classes, y_index=y,
+        sample_weight=w if weighted else np.broadcast_to(np.array(1.0), (y.shape[0],)),
+        fold=np.full(y.shape[0], -1, dtype=int), n_folds=0, estimator=estimator,
+    )
 
 
 # -- CostPolicyWrapper: held-out cost of a fixed rule -----------------------------------------
