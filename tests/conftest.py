@@ -260,6 +260,17 @@ def report_page_parser():
     return module
 
 
+@pytest.fixture
+def tally_path(monkeypatch):
+    """Dask and Spark fits through the tallies and reductions even on a few thousand rows: the
+    wrappers otherwise fit the rows of a set of at most ``probwrap.scale._tally.KEPT_ROWS`` rows
+    as in memory (tests/test_distributed_small_sets.py). The test files written for the tally
+    path use this, so that they keep checking it (the limit is read on the driver)."""
+    import probwrap.scale._tally as tally_module
+
+    monkeypatch.setattr(tally_module, "KEPT_ROWS", 0)
+
+
 # Spark's Python workers (also those of the Spark docs blocks, run in subprocesses) use this
 # interpreter, so they import the probwrap under test.
 os.environ.setdefault("PYSPARK_PYTHON", sys.executable)

@@ -29,6 +29,9 @@ from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
 from probwrap.calibration import FewClassRowsWarning, WeightScaleWarning
 from probwrap.scale import tally_scores
 
+# the tally / reduction path, also on few rows (conftest.py)
+pytestmark = pytest.mark.usefixtures("tally_path")
+
 da = pytest.importorskip("dask.array")
 dd = pytest.importorskip("dask.dataframe")
 pytest.importorskip("distributed")

@@ -14,6 +14,9 @@ from probwrap.scale import merge_tallies, tally_scores
 from probwrap.scale._bootstrap import tally_cutoff_interval, tally_prior_interval
 from probwrap.shift import PriorEstimator
 
+# the tally / reduction path, also on few rows (conftest.py)
+pytestmark = pytest.mark.usefixtures("tally_path")
+
 COSTS = {"fp": 1.0, "fn": 6.0}
 
 

@@ -14,6 +14,9 @@ from sklearn.metrics import log_loss
 from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
 from probwrap.scale import tally_model, tally_scores
 
+# the tally / reduction path, also on few rows (conftest.py)
+pytestmark = pytest.mark.usefixtures("tally_path")
+
 da = pytest.importorskip("dask.array")
 dd = pytest.importorskip("dask.dataframe")
 distributed = pytest.importorskip("distributed")
@@ -171,13 +174,11 @@ def test_dask_input_needs_a_frozen_binary_estimator(client):
         CalibrationWrapper(LogisticRegression(), method="platt").fit(Xd, yd)
     y3 = np.arange(3000) % 3
     est3 = FrozenEstimator(LogisticRegression().fit(X, y3))
-    # multiclass Dask input works for named methods (tests/test_scale_multiclass.py); "auto"
-    # only on at most KEPT_ROWS rows (their outputs come to the client: the in-memory choice;
-    # refused beyond, tests/test_distributed_small_sets.py)
-    remote = CalibrationWrapper(est3, method="auto", random_state=0).fit(
-        Xd, da.from_array(y3, chunks=1000))
-    assert remote.method_ == CalibrationWrapper(est3, method="auto", random_state=0).fit(
-        X, y3).method_
+    # multiclass Dask input works for named methods (tests/test_scale_multiclass.py), not "auto"
+    # (on the tally path; a set of at most KEPT_ROWS rows is fitted as in memory, "auto"
+    # included: tests/test_distributed_small_sets.py)
+    with pytest.raises(ValueError, match="auto"):
+        CalibrationWrapper(est3, method="auto").fit(Xd, da.from_array(y3, chunks=1000))
     est = FrozenEstimator(LogisticRegression().fit(X, y))
     with pytest.raises(ValueError, match="y"):
         CalibrationWrapper(est, method="platt").fit(Xd, da.from_array(y + 5, chunks=1000))

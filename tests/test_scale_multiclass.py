@@ -10,6 +10,9 @@ from sklearn.linear_model import LogisticRegression
 
 from probwrap import PriorShiftWrapper
 
+# the tally / reduction path, also on few rows (conftest.py)
+pytestmark = pytest.mark.usefixtures("tally_path")
+
 da = pytest.importorskip("dask.array")
 distributed = pytest.importorskip("distributed")
 

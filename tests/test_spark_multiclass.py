@@ -22,6 +22,8 @@ from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
 from probwrap.scale import add_predictions
 
 pytestmark = [
+    # the tally / reduction path, also on few rows (conftest.py)
+    pytest.mark.usefixtures("tally_path"),
     pytest.mark.slow,
     pytest.mark.filterwarnings("ignore:PySpark does not yet fully support pandas"),
     pytest.mark.filterwarnings("ignore:The copy keyword is deprecated"),

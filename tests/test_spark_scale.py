@@ -26,6 +26,8 @@ from probwrap.scale import add_predictions, tally_model, tally_scores
 
 # PySpark's own notes about newer pandas releases (not probwrap's concern)
 pytestmark = [
+    # the tally / reduction path, also on few rows (conftest.py)
+    pytest.mark.usefixtures("tally_path"),
     pytest.mark.slow,
     pytest.mark.filterwarnings("ignore:PySpark does not yet fully support pandas"),
     pytest.mark.filterwarnings("ignore:The copy keyword is deprecated"),

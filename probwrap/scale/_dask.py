@@ -374,8 +374,10 @@ def kept_rows_of(tally: ScoreTally) -> tuple | None:
     """``(outputs, label indices or None, weights)`` of a tally's kept rows (None if it has
     none): the weights divided by the tally's power-of-two unit, as the in-memory path divides
     weights far from 1 (``rescale_extreme_weights``), and unit weights when none were given."""
+    from ._tally import kept_rows_limit
+
     kept = tally.kept_rows
-    if kept is None or kept[0].shape[0] != tally.n_rows:
+    if kept is None or tally.n_rows > kept_rows_limit() or kept[0].shape[0] != tally.n_rows:
         return None
     values, labels, weights = kept
     if weights is None:

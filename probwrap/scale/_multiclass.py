@@ -42,7 +42,7 @@ from ._blocks import (
 from ._dask import _frozen_multiclass
 from ._multiclass_wrappers import _Smallest
 from ._rows import in_weight_unit, rows_of
-from ._tally import KEPT_ROWS, ZERO_WEIGHT, warn_weight_unit
+from ._tally import ZERO_WEIGHT, kept_rows_limit, warn_weight_unit
 
 __all__ = ["fit_multiclass_source", "estimate_multiclass_target"]
 
@@ -208,8 +208,8 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             )
         owner.classes_ = classes  # (set again below) for the warning about classes of few rows
         owner._warn_few_class_rows(np.asarray(weighted, dtype=np.int64))
-        if float(np.sum(rows)) <= KEPT_ROWS:
-            # a small set (KEPT_ROWS): the posteriors come to the client and the in-memory fit
+        if float(np.sum(rows)) <= kept_rows_limit():
+            # a small set (probwrap.scale._tally.KEPT_ROWS): the posteriors come to the client and the in-memory fit
             # runs on them — the tail choice on at most 200 labelled rows, the calibration's
             # count of rows for weights summing to fewer than the rows — so the result is the
             # in-memory one (the weights already divided by the unit, as in memory)
@@ -477,8 +477,8 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         if total <= 0:
             raise ValueError(ZERO_WEIGHT)
         warn_weight_unit(unit, "PriorShiftWrapper.adapt", total, stacklevel=5)
-        if n_rows <= KEPT_ROWS:
-            # a small set (KEPT_ROWS): the model's posteriors come to the client (one more
+        if n_rows <= kept_rows_limit():
+            # a small set (probwrap.scale._tally.KEPT_ROWS): the model's posteriors come to the client (one more
             # pass, predicting again: the kept blocks hold calibrated ones) and the in-memory
             # estimate runs on them, as adapt does in memory
             p, w = rows.map_reduce(_kept_target, estimator).arrays

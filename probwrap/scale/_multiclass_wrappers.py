@@ -21,7 +21,7 @@ from ._blocks import (
     class_rows,
     predict_block,
 )
-from ._tally import ZERO_WEIGHT
+from ._tally import ZERO_WEIGHT, kept_rows_limit
 
 __all__ = ["fit_multiclass_calibration", "first_block_row_costs", "heldout_cost_dask"]
 
@@ -166,7 +166,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
         # clip_ from the data as in memory (CalibrationWrapper._choose_clip): one pass, which
         # also brings the rows of a small set (at most KEPT_ROWS) to the client
         first = rows.map_reduce(_first_pass_block, owner)
-        if first.arrays is not None and first.n > 0:
+        if first.arrays is not None and 0 < first.n <= kept_rows_limit():
             return _small_set_heldout(owner, estimator, classes, first.arrays,
                                       sample_weight is not None)
         owner.clip_ = owner._clip_from_smallest(first.smallest)

@@ -50,6 +50,12 @@ _MAX_INDEX = 2.0**62
 #: hundred kilobytes to the client at most.
 KEPT_ROWS = 20_000
 
+
+def kept_rows_limit() -> int:
+    """:data:`KEPT_ROWS`, read when called (the driver-side decisions use it, so that a test can
+    lower it to exercise the tally path on few rows)."""
+    return KEPT_ROWS
+
 def _exponent(unit: float) -> int:
     return math.frexp(unit)[1] - 1
 
