@@ -91,3 +91,31 @@ def test_multiclass_prior_shift_on_spark_keeps_the_tail_choice(spark):
     np.testing.assert_allclose(spk.target_prior_, mem.target_prior_, rtol=0, atol=1e-12)
     share = np.bincount(y, weights=w, minlength=3)  # the weighted class shares
     np.testing.assert_allclose(spk.source_prior_, share / share.sum(), rtol=1e-12)
+
+
+def test_the_driver_collects_at_most_the_kept_rows_limit(spark, monkeypatch):
+    # each partition sends its rows only when it holds at most KEPT_ROWS / (number of
+    # partitions) of them, so the driver never holds more than KEPT_ROWS rows however many
+    # partitions a frame has; here the limit is lowered to 90 rows for 60 rows in 3 partitions
+    import probwrap.scale._tally as tally_module
+
+    monkeypatch.setattr(tally_module, "KEPT_ROWS", 90)
+    Xf, yf, X, y, _, _ = _rows(load_breast_cancer, 150, 60, seed=1)
+    model = FrozenEstimator(GaussianNB().fit(Xf, yf))
+
+    def parts(cuts):
+        # three partitions by a range of the column "part": rows cuts[i]..cuts[i + 1] in the
+        # i-th (the model reads only its own feature columns)
+        part = np.searchsorted(cuts, np.arange(60), side="right") - 1
+        frame = spark.createDataFrame(X.assign(label=y, part=part)).repartitionByRange(3, "part")
+        assert frame.rdd.glom().map(len).collect() == np.diff(cuts).tolist()
+        return frame
+
+    even = CostPolicyWrapper(model, costs=COSTS, strategy="tuned").fit(parts([0, 20, 40, 60]),
+                                                                        "label")
+    assert even.tally_.kept_rows is not None  # 20 rows a partition <= 90 / 3
+    uneven = CostPolicyWrapper(model, costs=COSTS, strategy="tuned").fit(parts([0, 58, 59, 60]),
+                                                                          "label")
+    assert uneven.tally_.kept_rows is None  # 58 rows in one partition > 30: the tally path
+    mem = CostPolicyWrapper(model, costs=COSTS, strategy="tuned").fit(X, y)
+    assert even.cutoff_ == mem.cutoff_

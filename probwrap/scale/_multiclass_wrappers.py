@@ -74,6 +74,10 @@ class _Capped:
                                                                   strict=True))
         return _Capped(n, min(self.smallest, other.smallest), arrays)
 
+    def without_rows_beyond(self, cap: int) -> _Capped:
+        """This result without its rows when it holds more than ``cap`` of them."""
+        return self if self.n <= cap else _Capped(self.n, self.smallest, None)
+
 
 def _first_pass_block(owner, Xb, yb, wb):
     """The rows of a block (while few: see :class:`_Capped`) and the smallest non-zero

@@ -123,6 +123,21 @@ def _loaded(blob: Any) -> Any:
     return value
 
 
+def _kept_rows_share(frame: Any) -> int:
+    """Rows a partition may send to the driver beside its result (a small set's rows, see
+    probwrap.scale._tally.KEPT_ROWS): the limit divided by the number of partitions, so the
+    driver never collects more than the limit however many partitions there are (a set of few
+    rows spread very unevenly over many partitions is fitted from its tally). 0 where the
+    number of partitions is unknown (Spark Connect)."""
+    from ._tally import kept_rows_limit
+
+    try:
+        n_parts = int(frame.rdd.getNumPartitions())
+    except Exception:  # Spark Connect: no RDD
+        return 0
+    return kept_rows_limit() // max(n_parts, 1)
+
+
 def _broadcast(frame: Any, value: Any) -> Any:
     """Send ``value`` to the executors once (a Spark broadcast variable)."""
     try:
@@ -222,6 +237,7 @@ def _tally_partitions(
 
     shared = _broadcast(frame, payload)
     labelled_cols = n_labels
+    share = _kept_rows_share(frame)
 
     def tally_partition(batches):
         from pyspark import TaskContext
@@ -262,6 +278,8 @@ def _tally_partitions(
             yield pd.DataFrame({"partition": [part], "tally": [_failure(exc)]})
             return
         if total is not None:
+            if total.kept_rows is not None and total.n_rows > share:
+                total.kept_rows = None  # the driver collects at most KEPT_ROWS rows in all
             yield pd.DataFrame({"partition": [part], "tally": [pickle.dumps(total)]})
 
     rows = frame.select(*columns).mapInPandas(
@@ -497,6 +515,7 @@ class SparkRows:
 
         shared = _broadcast(self._frame, (fn, args))
         spec = self._split
+        share = _kept_rows_share(self._frame)
 
         def map_partition(batches):
             f, a = shared.value
@@ -508,6 +527,9 @@ class SparkRows:
             except ValueError as exc:  # raised on the driver (see _WorkerError)
                 yield pd.DataFrame({"partition": [_partition_id()], "value": [_failure(exc)]})
                 return
+            if hasattr(total, "without_rows_beyond"):
+                # a small set's rows (multiclass first pass): at most KEPT_ROWS reach the driver
+                total = total.without_rows_beyond(share)
             if total is not None:
                 yield pd.DataFrame({"partition": [_partition_id()], "value": [pickle.dumps(total)]})
 
