@@ -46,6 +46,7 @@ LAYERS = {
     "plot": 4,
     "report": 4,
     "cli": 4,
+    "__main__": 4,  # python -m probwrap: the command line
 }
 WRAPPERS = {name for name, rank in LAYERS.items() if rank == 3}
 SCALE_ENTRY = "probwrap.scale._entry"
