@@ -196,7 +196,8 @@ def cusum_run_length(
     Returns
     -------
     float
-        The average number of batches until an alarm.
+        The average number of batches until an alarm; ``inf`` for a one-sided chart whose
+        mean lies so far on the other side that it never sounds in double precision.
 
     Examples
     --------
@@ -225,8 +226,13 @@ def cusum_run_length(
     upper_edges = np.concatenate([edges, [h]])  # upper edges of states 0..m-1
     cdf = norm.cdf(upper_edges[None, :] - centre[:, None] + k - float(shift))
     r = np.diff(np.concatenate([np.zeros((m, 1)), cdf], axis=1), axis=1)
-    arl = np.linalg.solve(np.eye(m) - r, np.ones(m))
-    return float(arl[0])
+    try:
+        arl = np.linalg.solve(np.eye(m) - r, np.ones(m))
+    except np.linalg.LinAlgError:
+        # a mean so far below -k that no state ever leaves for h in double precision (batches
+        # many standard errors below the baseline, for the upward chart): it never sounds
+        return float("inf")
+    return float(arl[0]) if np.isfinite(arl[0]) and arl[0] >= 1.0 else float("inf")
 
 
 def _share(value: Any) -> float:
