@@ -28,6 +28,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import re
 import warnings
 from typing import Any
 
@@ -43,6 +44,7 @@ from ._common import (
     add_seed_flag,
     check_ranking,
     check_row_count,
+    warn_line,
     whole_number,
 )
 from ._cutoff import _level
@@ -79,22 +81,84 @@ def _batch_labels(frame: Any, args: argparse.Namespace, n: int) -> np.ndarray | 
     col = frame[args.batch_column]
     if col.isna().any():
         row = int(np.flatnonzero(col.isna().to_numpy())[0])
-        raise DataError(f"{args.unlabelled}: column {plain(args.batch_column)!r} has no batch "
-                        f"label in data row {row + 1} (--batch-column)")
-    return col.astype(str).to_numpy()
+        raise DataError(f"{args.unlabelled}: column {plain(args.batch_column)!r}, row {row + 2} "
+                        "(counting the header as row 1) has no batch label (--batch-column)")
+    labels = col.astype(str).to_numpy()
+    _warn_out_of_order(col, labels, args)
+    return labels
+
+
+def _order_keys(col: Any) -> tuple[np.ndarray, str] | None:
+    """Numbers or dates the batch labels stand for (None for other labels such as words)."""
+    import pandas as pd
+
+    if pd.api.types.is_bool_dtype(col.dtype):
+        return None
+    if pd.api.types.is_numeric_dtype(col.dtype):
+        return col.to_numpy(dtype=float), "numbers"
+    if pd.api.types.is_datetime64_any_dtype(col.dtype):
+        return col.to_numpy(dtype="datetime64[ns]").astype(np.int64).astype(float), "dates"
+    text = col.astype(str).str.strip()
+    numbers = pd.to_numeric(text, errors="coerce")
+    if numbers.notna().all():
+        return numbers.to_numpy(dtype=float), "numbers"
+    dates = pd.to_datetime(text, errors="coerce", format="ISO8601")
+    if dates.notna().all():
+        return dates.to_numpy(dtype="datetime64[ns]").astype(np.int64).astype(float), "dates"
+    return None
+
+
+def _warn_out_of_order(col: Any, labels: np.ndarray, args: argparse.Namespace) -> None:
+    """Warn when the batch labels are numbers or dates whose rows are not in increasing order:
+    batches are taken in the order of their first row, so the alarm would run out of time
+    order (a file exported newest first ran the chart backwards without a word)."""
+    keys = _order_keys(col)
+    if keys is None:
+        return
+    values, kind = keys
+    _, first = np.unique(labels, return_index=True)
+    first = np.sort(first)
+    step = np.flatnonzero(np.diff(values[first]) < 0)
+    if step.size:
+        a, b = labels[first[step[0]]], labels[first[step[0] + 1]]
+        warn_line("prevalence", (
+            f"{args.unlabelled}: the batch labels of column {plain(args.batch_column)!r} "
+            f"(--batch-column) are {kind}, but their rows are not in increasing order (batch "
+            f"{plain(b)!r} first appears after batch {plain(a)!r}); batches are taken in the "
+            "order of their first row, so the alarm runs in that order: sort the rows by "
+            f"{plain(args.batch_column)!r} first if the batches are times"))
+
+
+_NUMBER = re.compile(r"\d+(?:\.\d+)?(?:e[-+]?\d+)?")
 
 
 def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
               seed: int | None) -> list[dict[str, Any]]:
+    """Each batch's estimate. A warning met in a batch is warned once per kind (messages that
+    differ only in their numbers), naming the batch it is shown for and how many more had it:
+    it said "250 effective unlabelled rows" without saying of which batch."""
     uniq, first, inverse = np.unique(labels, return_index=True, return_inverse=True)
     rows = []
+    kinds: dict[tuple[type, str], list[Any]] = {}
     for i, b in enumerate(np.argsort(first, kind="stable")):
         mask = inverse.ravel() == b
-        res = estimate(proba[mask], None if seed is None else seed + 1 + i)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            res = estimate(proba[mask], None if seed is None else seed + 1 + i)
+        for w in caught:
+            key = (w.category, _NUMBER.sub("#", str(w.message)))
+            if key in kinds:
+                kinds[key][2].add(str(uniq[b]))
+            else:
+                kinds[key] = [str(w.message), str(uniq[b]), {str(uniq[b])}]
         rows.append({"batch": str(uniq[b]), "n_rows": int(mask.sum()),
                      "prevalence": res["prevalence"], "interval": res["interval"],
                      "shift_statistic": res["shift_statistic"],
                      "shift_pvalue": res["shift_pvalue"]})
+    for (category, _), (message, batch, batches) in kinds.items():
+        more = len(batches) - 1
+        also = f" (and {more} more batch{'es' if more > 1 else ''} alike)" if more else ""
+        warnings.warn(f"batch {batch!r}{also}: {message}", category, stacklevel=2)
     return rows
 
 
@@ -156,9 +220,18 @@ def _run(args: argparse.Namespace) -> int:
     names = ["reading", "estimating the prevalence" + (" and its interval" if args.resamples else "")]
     with Stages("prevalence", names) as stages:
         stages.start("reading")
-        frame = read_table(args.unlabelled, exact=[args.score_column])
+        # batch labels as written: "01" and "1" are two batches, as group columns are read
+        frame = read_table(args.unlabelled, exact=[args.score_column],
+                           text=[] if args.batch_column is None else [args.batch_column])
         proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale)
         batch_labels = _batch_labels(frame, args, proba.shape[0])
+        if batch_labels is not None and np.unique(batch_labels).shape[0] < 2:
+            flag = (f"--batch-size {args.batch_size} is not below the file's {proba.shape[0]} rows"
+                    if args.batch_size is not None else
+                    f"column {plain(args.batch_column)!r} (--batch-column) holds one label")
+            warn_line("prevalence", (
+                f"{args.unlabelled}: {flag}, so there is one batch: the prevalence alarm needs a "
+                "series of batches and cannot judge a drift from one"))
         if args.scale == "log-odds":
             from probwrap.calibration import log_odds_to_proba
 
@@ -214,6 +287,11 @@ def _run(args: argparse.Namespace) -> int:
                 raise DataError(
                     f"{args.unlabelled}: the prevalence cannot be estimated ({exc})"
                 ) from None
+    names = out.get("labels") or {"negative": "negative", "positive": "positive"}
+    for w in caught:  # the library counts classes by index; the user knows them by label
+        w.message = str(w.message).replace(
+            "class index 0", f"the class {names['negative']!r}").replace(
+            "class index 1", f"the class {names['positive']!r}")
     report_warnings("prevalence", caught)
     if not all(np.isfinite(v) for v in (out["prevalence"], out["shift_statistic"])):
         raise DataError(

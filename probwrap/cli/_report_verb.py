@@ -68,15 +68,16 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "report",
         help="write a single-file HTML report for a labelled score file",
-        description="Calibration, decisions and prevalence for a file of positive-class "
-        "probabilities with 0/1 labels (CSV or Parquet); optionally an unlabelled file from the "
+        description="Calibration, decisions and prevalence for a labelled file of positive-class "
+        "scores (CSV or Parquet; two labels, or late labels); optionally an unlabelled file from the "
         "deployment population. With --class-columns (one probability column per class) and "
         "--cost-matrix, the multiclass / multi-action report.",
     )
     parser.add_argument("--scores", required=True, metavar="FILE",
                         help="labelled score file (CSV or Parquet)")
     parser.add_argument("--score-column", metavar="C",
-                        help="column of positive-class probabilities in [0, 1]")
+                        help="column of positive-class scores: probabilities in [0, 1], or "
+                        "log-odds with --scale log-odds")
     parser.add_argument("--class-columns", metavar="C1,C2,...",
                         help="instead of --score-column: one probability column per class, "
                         "comma-separated; labels are these column names or indices 0..k-1")
@@ -98,7 +99,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--unlabelled", metavar="FILE",
                         help="unlabelled score file from the deployment population")
     parser.add_argument("--unlabelled-score-column", metavar="C",
-                        help="its probability column (default: --score-column)")
+                        help="its score column, on the same scale (default: --score-column)")
     for key, default, what in (("fp", None, "acting on a negative"),
                                ("fn", None, "not acting on a positive"),
                                ("tp", 0.0, "acting on a positive"),
@@ -220,6 +221,11 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         _check_class_rows(y, columns, args.scores)
         if q is not None:
             check_row_count("report", q.shape[0], args.unlabelled, "unlabelled rows")
+            if args.batch_size is not None and args.batch_size >= q.shape[0]:
+                warn_line("report", (
+                    f"{args.unlabelled}: --batch-size {args.batch_size} is not below the file's "
+                    f"{q.shape[0]} rows, so there is one batch: the prevalence alarm needs a "
+                    "series of batches and cannot judge a drift from one"))
         extra = {}
         if args.group_column is not None:
             extra["groups"] = _group_labels(frame, args.group_column, args.scores)
@@ -428,6 +434,11 @@ def _handler(args: argparse.Namespace) -> int:
         check_row_count("report", p.shape[0], args.scores, "labelled rows")
         if q is not None:
             check_row_count("report", q.shape[0], args.unlabelled, "unlabelled rows")
+            if args.batch_size is not None and args.batch_size >= q.shape[0]:
+                warn_line("report", (
+                    f"{args.unlabelled}: --batch-size {args.batch_size} is not below the file's "
+                    f"{q.shape[0]} rows, so there is one batch: the prevalence alarm needs a "
+                    "series of batches and cannot judge a drift from one"))
         check_ranking("report", p[closed], y[closed], labels, args.scores)
         if args.scale == "log-odds":
             from probwrap.calibration import log_odds_to_proba
