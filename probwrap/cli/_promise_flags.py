@@ -14,6 +14,7 @@ Guarantee (``cutoff``, ``report``): ``--guarantee`` (which metric), ``--guarante
 from __future__ import annotations
 
 import argparse
+import re
 from typing import Any
 
 import numpy as np
@@ -91,9 +92,27 @@ def read_late_labels(frame: Any, args: argparse.Namespace, path: str) -> Any:
                         f"the header as row 1) holds {shown(event[row])}; events are 1 "
                         "(happened) or 0 (not yet), or True / False")
     try:
-        return labels_at_horizon(time, event.astype(int), args.horizon)
+        hl = labels_at_horizon(time, event.astype(int), args.horizon)
     except ValueError as exc:
-        raise DataError(f"{path}: late labels: {clean(str(exc))}") from None
+        # the library names its arguments; a user of the command line knows the flags
+        text = re.sub(r"`horizon`=(\S+)", r"--horizon \1", str(exc))
+        text = text.replace("`horizon`", "--horizon").replace(
+            "`time`", "the time column (--time-column)").replace(
+            "`event`", "the event column (--event-column)")
+        raise DataError(f"{path}: late labels: {clean(text)}") from None
+    known = hl.sample_weight > 0
+    for value, what, fix in ((0, "without the event within", "a shorter"),
+                             (1, "with the event within", "a longer")):
+        if not np.any(known & (hl.y == value)):
+            # every known outcome is one class: a cutoff, a map or a report on it would be
+            # computed on one class (the cutoff verb printed a zero cost for acting on all)
+            n_open = int(np.count_nonzero(hl.is_open))
+            held = f" ({n_open} rows are still open and weigh 0)" if n_open else ""
+            raise DataError(
+                f"{path}: late labels: no row is known to be {what} --horizon "
+                f"{hl.horizon:g}{held}, so there are not both outcomes to learn from; choose "
+                f"{fix} horizon, or wait for more outcomes")
+    return hl
 
 
 _TRUE_FALSE = {"true": "1", "false": "0"}
@@ -230,6 +249,11 @@ def guarantee_args(args: argparse.Namespace,
         return None
     if args.guarantee_target is None:
         parser.error(f"--guarantee {args.guarantee} needs --guarantee-target (e.g. 0.9)")
+    if args.guarantee == "precision" and args.guarantee_method == "expectation":
+        # precision does not move one way with the cutoff, so no cutoff is certified on average
+        parser.error("--guarantee precision takes --guarantee-method high_probability only "
+                     "(precision does not move one way with the cutoff, which the expectation "
+                     "method needs)")
     return {"requirement": args.guarantee, "target": args.guarantee_target,
             "confidence": args.guarantee_confidence, "method": args.guarantee_method}
 
