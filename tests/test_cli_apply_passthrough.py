@@ -74,13 +74,15 @@ def test_semicolon_file_keeps_its_decimal_commas(map_file, tmp_path, capsys):
     (tmp_path / "eu.csv").write_text("id;risk;amount\n01;0,25;1,50\n02;0,75;NA\n")
     code, err = _apply(map_file, tmp_path / "eu.csv", tmp_path / "out.csv", capsys)
     assert code == 0, err
-    written = pd.read_csv(tmp_path / "out.csv", dtype=str, keep_default_na=False)
+    # written back as it came: ';'-separated with decimal commas (it opens in the same
+    # spreadsheet); the score column is the column of numbers read, the others their text
+    written = pd.read_csv(tmp_path / "out.csv", dtype=str, keep_default_na=False, sep=";")
     assert written["id"].tolist() == ["01", "02"]
-    # the score column is the column of numbers read (as before), the others their text
-    assert written["risk"].tolist() == ["0.25", "0.75"]
+    assert written["risk"].tolist() == ["0,25", "0,75"]
     assert written["amount"].tolist() == ["1,50", "NA"]
-    np.testing.assert_array_equal(written["calibrated_probability"].astype(float),
-                                  _expected(map_file, [0.25, 0.75]))
+    np.testing.assert_array_equal(
+        written["calibrated_probability"].str.replace(",", ".").astype(float),
+        _expected(map_file, [0.25, 0.75]))
 
 
 def test_missing_score_is_still_refused(map_file, tmp_path, capsys):

@@ -288,15 +288,17 @@ def _apply(args: argparse.Namespace) -> int:
             out[start : start + _CHUNK] = cal_map.predict(log_odds[start : start + _CHUNK])
         if not np.all(np.isfinite(out)):
             raise DataError(f"{args.map}: the map gives probabilities that are not finite")
+        dialect = frame.attrs.get("csv_dialect")
         frame = frame.copy()
         frame.attrs.clear()
         if not is_numeric_dtype(frame[args.score_column].dtype):
-            # a CSV column read as text: written as the numbers it holds (dot decimal mark);
+            # a CSV column read as text: written as the numbers it holds (with the decimal
+            # mark of the file it came from);
             # a Parquet column of numbers keeps its type (float32 stays float32)
             frame[args.score_column] = scores
         frame[args.output_column] = out
         stages.start("writing")
-        write_table(frame, args.out)
+        write_table(frame, args.out, dialect=dialect)
     print(
         f"wrote {frame.shape[0]} rows with column {shown(args.output_column)} "
         f"({description['method']} map, {scale} scores) to {args.out}"

@@ -125,13 +125,22 @@ def write_text(path: str | Path, text: str) -> None:
     write_atomic(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
 
-def write_table(frame: Any, path: str | Path) -> None:
-    """Write a DataFrame atomically, as Parquet (``.parquet``/``.pq``) or CSV (``.csv``)."""
+def write_table(frame: Any, path: str | Path, *, dialect: dict[str, Any] | None = None) -> None:
+    """Write a DataFrame atomically, as Parquet (``.parquet``/``.pq``) or CSV (``.csv``).
+
+    ``dialect`` (CSV only): ``sep``, ``decimal`` and ``bom`` of the file the table was read
+    from, so that a semicolon file with decimal commas is written back as one (numbers with a
+    decimal comma) and a file that started with a byte-order mark starts with one (spreadsheets
+    read the encoding from it).
+    """
     path = Path(path)
+    dialect = dialect or {}
     if path.suffix.lower() not in TABLE_SUFFIXES:
         raise DataError(f"{path}: unsupported file type; use one of {', '.join(TABLE_SUFFIXES)}")
     if table_kind(path) == "Parquet":
         require("pyarrow")
         write_atomic(path, lambda tmp: frame.to_parquet(tmp, index=False))
     else:
-        write_atomic(path, lambda tmp: frame.to_csv(tmp, index=False))
+        options = {"sep": dialect.get("sep", ","), "decimal": dialect.get("decimal", "."),
+                   "encoding": "utf-8-sig" if dialect.get("bom") else "utf-8"}
+        write_atomic(path, lambda tmp: frame.to_csv(tmp, index=False, **options))

@@ -29,7 +29,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     back as the same float, in every pandas version).
 
     ``as_text=True`` (a table that is written out again, as by ``calibrate apply``): every CSV
-    column is kept as the text it holds, with nothing taken for a missing value in the other
+    column is kept as the text it holds (and ``frame.attrs["csv_dialect"]`` records the
+    separator, the decimal mark and whether the file started with a byte-order mark), with nothing taken for a missing value in the other
     columns (``NA``, ``None``, ``000123`` and ``12345678901234567890`` stay as written), and
     decimal commas stay commas (:func:`numeric_column` reads them); a Parquet file's index,
     when it has a named or non-default one, becomes an ordinary column so that it is written
@@ -81,6 +82,10 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                               encoding=encoding, **text_options)
             if as_text:  # kept as written; numeric_column reads the decimal commas
                 frame.attrs["decimal"] = decimal
+                # how the file was written, so that a table written back (calibrate apply)
+                # opens the same way in the same spreadsheet
+                frame.attrs["csv_dialect"] = {"sep": sep, "decimal": decimal,
+                                              "bom": _starts_with_bom(path)}
             elif decimal == ",":  # columns read as text keep their decimal commas: make dots
                 for column in set(exact) & set(frame.columns):
                     frame[column] = frame[column].str.replace(",", ".", regex=False)
@@ -194,6 +199,16 @@ def _csv_encoding(path: Path) -> str:
     except OSError:
         return "utf-8-sig"
     return "utf-16" if start in (b"\xff\xfe", b"\xfe\xff") else "utf-8-sig"
+
+
+def _starts_with_bom(path: Path) -> bool:
+    """True when the file starts with a UTF-8 or UTF-16 byte-order mark."""
+    try:
+        with open(path, "rb") as handle:
+            start = handle.read(3)
+    except OSError:
+        return False
+    return start == b"\xef\xbb\xbf" or start[:2] in (b"\xff\xfe", b"\xfe\xff")
 
 
 def _csv_header(path: Path, encoding: str, sep: str) -> list[str] | None:
