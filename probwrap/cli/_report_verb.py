@@ -6,6 +6,7 @@ import argparse
 import json
 import math
 import warnings
+from typing import Any
 
 import numpy as np
 
@@ -242,6 +243,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
     if content.shift_pvalue is not None:
         summary["shift_pvalue"] = float(content.shift_pvalue)
         line += f", shift p = {content.shift_pvalue:.3g}"
+    line += group_summary(content, summary)
     _print_summary(args, line, summary)
     return 0
 
@@ -358,6 +360,48 @@ def _collect_parameters() -> set[str]:
     from probwrap.report._content import collect_content  # what build_report calls
 
     return set(inspect.signature(collect_content).parameters)
+
+
+def _plain_json(value: Any) -> Any:
+    """A by-group field as JSON: NaN as null, NumPy numbers and arrays as plain ones."""
+    if hasattr(value, "tolist"):
+        value = value.tolist()
+    if isinstance(value, list | tuple):
+        return [_plain_json(v) for v in value]
+    if isinstance(value, float):
+        return value if np.isfinite(value) else None
+    if isinstance(value, bool | int | str) or value is None:
+        return value
+    return str(value)
+
+
+def group_summary(content: Any, summary: dict) -> str:
+    """The "By group" section in the JSON summary (``groups``: every group's checks, the
+    overall row, the gaps between judged groups and the notes), and its words in the line.
+
+    With ``--group-column`` and ``--format json`` the summary had nothing about the groups, so
+    a program had to read them off the HTML page.
+    """
+    import dataclasses
+
+    checks = getattr(content, "group_checks", None)
+    if checks is None:
+        return ""
+
+    def row(check: Any) -> dict:
+        return {f.name: _plain_json(getattr(check, f.name)) for f in dataclasses.fields(check)}
+
+    summary["groups"] = {
+        "groups": [row(c) for c in checks.groups],
+        "overall": row(checks.overall),
+        "gaps": [row(g) for g in checks.gaps],
+        "min_rows": float(checks.min_rows), "min_events": float(checks.min_events),
+        "notes": list(checks.notes),
+    }
+    if getattr(checks, "action_names", None) is not None:  # the order of action_shares
+        summary["groups"]["action_names"] = [str(a) for a in checks.action_names]
+    judged = sum(bool(c.judged) for c in checks.groups)
+    return f", {len(checks.groups)} groups ({judged} judged)"
 
 
 def _print_summary(args: argparse.Namespace, line: str, summary: dict) -> None:
@@ -489,5 +533,6 @@ def _handler(args: argparse.Namespace) -> int:
                            adaptation_weight=float(content.adaptation_weight))
             line += f", applied by the rules {content.applied_prevalence:.4f}"
     line += promise_summary(content, summary)
+    line += group_summary(content, summary)
     _print_summary(args, line, summary)
     return 0
