@@ -24,9 +24,11 @@ from ._common import (
     DataError,
     add_positive_label_flag,
     add_seed_flag,
+    add_weight_flag,
     check_ranking,
     check_row_count,
     clean,
+    read_weights,
     shown,
     whole_number,
 )
@@ -116,8 +118,11 @@ def _fit(args: argparse.Namespace) -> int:
     with Stages("calibrate", ["reading", "fitting the map", "writing"]) as stages:
         stages.start("reading")
         late_columns = late_label_columns(args, args._fit_parser)
-        frame = read_table(args.scores, exact=[args.score_column, *(late_columns or [])])
+        frame = read_table(args.scores, exact=[args.score_column, *(late_columns or []),
+                                                *([args.weight_column] if args.weight_column
+                                                  else [])])
         scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
+        given = read_weights(frame, args.weight_column, args.scores, "calibrate")
         late = weights = None
         if late_columns is None:
             y, labels = read_labels(
@@ -125,9 +130,13 @@ def _fit(args: argparse.Namespace) -> int:
             )
             closed = np.ones(y.shape[0], dtype=bool)
         else:
-            late = read_late_labels(frame, args, args.scores)
+            late = read_late_labels(frame, args, args.scores, sample_weight=given)
             y, weights, closed = late.y, late.sample_weight, ~late.is_open
             labels = [f"no event within {late.horizon:g}", f"event within {late.horizon:g}"]
+        if late is None:  # (late labels carry the given weights in theirs)
+            weights = given
+        if given is not None:  # rows of weight 0 are not counted
+            closed = closed & (given > 0)
         check_row_count("calibrate", scores.shape[0], args.scores)
         check_ranking("calibrate", scores[closed], y[closed], labels, args.scores)
         counts = np.bincount(y[closed], minlength=2)
@@ -159,6 +168,8 @@ def _fit(args: argparse.Namespace) -> int:
         }
         if late is not None:
             metadata["late_labels"] = late_label_summary(late)
+        if given is not None:
+            metadata["weight_column"] = args.weight_column
         if args.method == "auto":
             metadata["auto_log_loss"] = {
                 name: {"log_loss": loss, "standard_error": se}
@@ -345,6 +356,7 @@ def register(subparsers: Any) -> None:
     )
     add_seed_flag(fit, "the folds")
     add_late_label_flags(fit)
+    add_weight_flag(fit)
     fit.add_argument("--out", required=True, metavar="MAP.json",
                      help="where to save the map (.json)")
 

@@ -23,9 +23,12 @@ from ._common import (
     add_positive_label_flag,
     add_resamples_flag,
     add_seed_flag,
+    add_weight_flag,
     check_ranking,
     check_row_count,
+    read_weights,
     shown,
+    weight_summary,
 )
 from ._progress import Stages
 from ._promise_flags import (
@@ -344,18 +347,25 @@ def _run(args: argparse.Namespace) -> int:
     late = weights = None
     with Stages("cutoff", ["reading", "searching the cutoff and its interval"]) as stages:
         stages.start("reading")
-        frame = read_table(args.scores, exact=[args.score_column, *(late_columns or [])])
+        frame = read_table(args.scores, exact=[args.score_column, *(late_columns or []),
+                                                *([args.weight_column] if args.weight_column
+                                                  else [])])
         scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
+        given = read_weights(frame, args.weight_column, args.scores, "cutoff")
         if late_columns is None:
             y, labels = read_labels(
                 frame, args.label_column, args.scores, positive=args.positive_label
             )
             closed = np.ones(y.shape[0], dtype=bool)
         else:
-            late = read_late_labels(frame, args, args.scores)
+            late = read_late_labels(frame, args, args.scores, sample_weight=given)
             y, weights = late.y, late.sample_weight
             labels = [f"no event within {late.horizon:g}", f"event within {late.horizon:g}"]
             closed = ~late.is_open
+        if late is None:  # (late labels carry the given weights in theirs)
+            weights = given
+        if given is not None:  # rows of weight 0 are not judged
+            closed = closed & (given > 0)
         check_row_count("cutoff", scores.shape[0], args.scores)
         check_ranking("cutoff", scores[closed], y[closed], labels, args.scores)
         costs = {"tp": args.cost_tp, "fp": args.cost_fp, "fn": args.cost_fn, "tn": args.cost_tn}
@@ -375,12 +385,18 @@ def _run(args: argparse.Namespace) -> int:
     out["labels"] = {"negative": labels[0], "positive": labels[1]}
     if late is not None:
         out["late_labels"] = late_label_summary(late)
+    if given is not None:
+        out["weights"] = weight_summary(args.weight_column, given)
     if args.format == "json":
         print(json.dumps(out, indent=2, allow_nan=False))
     else:
         print(_text(out, args.scores))
         if late is not None:
             print("  " + late_label_line(late))
+        if given is not None:
+            ws = out["weights"]
+            print(f"  weights: column {shown(ws['column'])}, sum {ws['sum']:.6g} "
+                  f"({ws['effective_rows']:.1f} effective rows, Kish); every number is weighted")
     return 0
 
 
@@ -422,5 +438,6 @@ def register(subparsers: Any) -> None:
     add_seed_flag(parser, "the bootstrap and of the folds that choose a recalibration map")
     add_guarantee_flags(parser)
     add_late_label_flags(parser)
+    add_weight_flag(parser)
     add_format_flag(parser)
     parser.set_defaults(func=_run, _parser=parser)

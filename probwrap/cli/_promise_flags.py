@@ -78,8 +78,11 @@ def late_label_columns(args: argparse.Namespace, parser: argparse.ArgumentParser
     return [args.time_column, args.event_column]
 
 
-def read_late_labels(frame: Any, args: argparse.Namespace, path: str) -> Any:
-    """:class:`~probwrap.late_labels.HorizonLabels` from the file's time and event columns."""
+def read_late_labels(frame: Any, args: argparse.Namespace, path: str,
+                     sample_weight: np.ndarray | None = None) -> Any:
+    """:class:`~probwrap.late_labels.HorizonLabels` from the file's time and event columns
+    (``sample_weight``: the rows' own weights, ``--weight-column``, which the censoring
+    weights then multiply)."""
     from probwrap.late_labels import labels_at_horizon
 
     time = numeric_column(frame, args.time_column, path, flag="--time-column")
@@ -92,7 +95,8 @@ def read_late_labels(frame: Any, args: argparse.Namespace, path: str) -> Any:
                         f"the header as row 1) holds {shown(event[row])}; events are 1 "
                         "(happened) or 0 (not yet), or True / False")
     try:
-        hl = labels_at_horizon(time, event.astype(int), args.horizon)
+        hl = labels_at_horizon(time, event.astype(int), args.horizon,
+                               sample_weight=sample_weight)
     except ValueError as exc:
         # the library names its arguments; a user of the command line knows the flags
         text = re.sub(r"`horizon`=(\S+)", r"--horizon \1", str(exc))

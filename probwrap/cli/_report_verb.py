@@ -19,12 +19,15 @@ from ._common import (
     add_positive_label_flag,
     add_resamples_flag,
     add_seed_flag,
+    add_weight_flag,
     check_ranking,
     check_row_count,
     clean,
+    read_weights,
     require,
     shown,
     warn_line,
+    weight_summary,
     whole_number,
 )
 from ._files import check_out_suffix, check_writable, write_text
@@ -122,6 +125,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     add_alarm_flags(parser)
     add_guarantee_flags(parser)
     add_late_label_flags(parser)
+    add_weight_flag(parser)
     add_seed_flag(parser, "the bootstraps and folds")
     parser.add_argument("--title", default="probwrap report", help="report title")
     parser.add_argument("--out", required=True, metavar="FILE",
@@ -163,6 +167,8 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         parser.error("with --class-columns give costs as --cost-matrix, not --cost-fp/--cost-fn")
     if args.batch_size is not None:
         parser.error("--batch-size is available for binary score files only")
+    if args.weight_column is not None:
+        parser.error("--weight-column is available for binary score files only (--score-column)")
     if args.unlabelled_score_column is not None:
         parser.error("--unlabelled-score-column is for binary score files (--score-column); "
                      "with --class-columns the unlabelled file holds the same class columns")
@@ -453,18 +459,23 @@ def _handler(args: argparse.Namespace) -> int:
             )
     with Stages("report", ["reading", "computing the report", "writing"]) as stages:
         stages.start("reading")
-        frame = read_table(args.scores, exact=[args.score_column, *(late_columns or [])],
+        frame = read_table(args.scores, exact=[args.score_column, *(late_columns or []),
+                                               *([args.weight_column] if args.weight_column
+                                                 else [])],
                            text=_text_columns(args))
         p = read_scores(frame, args.score_column, args.scores, scale=args.scale)
+        given = read_weights(frame, args.weight_column, args.scores, "report")
         late = None
         if late_columns is None:
             y, labels = read_labels(frame, args.label_column, args.scores,
                                     positive=args.positive_label)
             closed = np.ones(y.shape[0], dtype=bool)
         else:
-            late = read_late_labels(frame, args, args.scores)
+            late = read_late_labels(frame, args, args.scores, sample_weight=given)
             y, closed = late.y, ~late.is_open
             labels = [f"no event within {late.horizon:g}", f"event within {late.horizon:g}"]
+        if given is not None:  # rows of weight 0 are not judged
+            closed = closed & (given > 0)
         if np.unique(y).shape[0] < 2:
             raise DataError(f"{args.scores}: both outcomes are needed (rows with and without "
                             "the event)")
@@ -495,9 +506,11 @@ def _handler(args: argparse.Namespace) -> int:
         if args.group_column is not None:
             extra["groups"] = _group_labels(frame, args.group_column, args.scores)
         if late is not None:
-            extra["horizon_labels"] = late
+            extra["horizon_labels"] = late  # (carrying the given weights)
         else:
             extra["y_true"] = y
+            if given is not None:
+                extra["sample_weight"] = given
         if args.batch_size is not None:
             extra.update(alarm_reference=args.alarm_reference,
                          alarm_decision_interval=args.alarm_decision_interval)
@@ -534,5 +547,8 @@ def _handler(args: argparse.Namespace) -> int:
             line += f", applied by the rules {content.applied_prevalence:.4f}"
     line += promise_summary(content, summary)
     line += group_summary(content, summary)
+    if given is not None:
+        summary["weights"] = weight_summary(args.weight_column, given)
+        line += f"; weighted by {shown(args.weight_column)}"
     _print_summary(args, line, summary)
     return 0
