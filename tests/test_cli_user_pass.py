@@ -343,3 +343,18 @@ def test_report_json_carries_the_groups(tmp_path, capsys):
     x = next(g for g in groups["groups"] if g["group"] == "x")
     assert x["effective_rows"] == int((wine.site == "x").sum())
     assert sum(x["action_shares"]) == pytest.approx(1.0)
+
+
+@pytest.mark.parametrize(("argv", "hint"), [
+    (["prevalence", "--unlabelled", "u.csv", "--score-column", "risk",
+      "--source-prevalence", "0,033"], "'0,033' is not a number (write the decimal mark as a "
+     "point: 0.033)"),
+    (["cutoff", "--scores", "s.csv", "--score-column", "risk", "--label-column", "y",
+      "--cost-fp", "1,5", "--cost-fn", "3"], "'1,5' is not a number (write the decimal mark as "
+     "a point: 1.5)"),
+])
+def test_a_decimal_comma_in_an_option_is_named(argv, hint, capsys):
+    with pytest.raises(SystemExit) as stop:
+        main(argv)
+    assert stop.value.code == 2
+    assert hint in capsys.readouterr().err

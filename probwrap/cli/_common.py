@@ -24,7 +24,7 @@ __all__ = [
     "TABLE_SUFFIXES", "table_kind", "one_line", "warn_line", "check_ranking", "check_row_count",
     "FEW_ROWS", "MIN_RESAMPLES", "add_positive_label_flag", "add_format_flag",
     "add_resamples_flag", "whole_number", "add_seed_flag", "MAX_SEED", "add_weight_flag",
-    "read_weights", "weight_summary",
+    "read_weights", "weight_summary", "not_a_number",
 ]
 
 
@@ -209,6 +209,21 @@ def add_positive_label_flag(parser: argparse.ArgumentParser, what: str = "label"
         help=f"which {what} is the positive class (the class the scores are the probability "
         "of); required unless the labels are 0/1 or True/False (then 1 / True)",
     )
+
+
+def not_a_number(text: str) -> argparse.ArgumentTypeError:
+    """The usage error for an option value that is not a number; a decimal comma (``0,04``,
+    as typed in many European locales) is named, with the value written with a point.
+
+    Examples
+    --------
+    >>> str(not_a_number("0,04"))
+    "'0,04' is not a number (write the decimal mark as a point: 0.04)"
+    """
+    hint = ""
+    if re.fullmatch(r"\s*[-+]?\d*,\d+(?:[eE][-+]?\d+)?\s*", text):
+        hint = f" (write the decimal mark as a point: {text.strip().replace(',', '.')})"
+    return argparse.ArgumentTypeError(f"{plain(text)!r} is not a number{hint}")
 
 
 def add_weight_flag(parser: argparse.ArgumentParser) -> None:

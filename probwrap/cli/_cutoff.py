@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import plain, power_of_two_unit
+from .._validation import power_of_two_unit
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
@@ -26,6 +26,7 @@ from ._common import (
     add_weight_flag,
     check_ranking,
     check_row_count,
+    not_a_number,
     read_weights,
     shown,
     weight_summary,
@@ -49,7 +50,7 @@ def _finite_number(text: str) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{plain(text)!r} is not a number") from None
+        raise not_a_number(text) from None
     if not math.isfinite(value):
         raise argparse.ArgumentTypeError(f"must be finite; got {text}")
     return value

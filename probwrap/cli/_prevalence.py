@@ -44,6 +44,7 @@ from ._common import (
     add_seed_flag,
     check_ranking,
     check_row_count,
+    not_a_number,
     warn_line,
     whole_number,
 )
@@ -64,7 +65,7 @@ def _prevalence(text: str) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{plain(text)!r} is not a number") from None
+        raise not_a_number(text) from None
     if not 0.0 < value < 1.0:
         raise argparse.ArgumentTypeError(f"must be a share strictly between 0 and 1; got {text}")
     return value

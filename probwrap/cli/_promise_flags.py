@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 
 from .._validation import plain
-from ._common import DataError, clean, shown
+from ._common import DataError, clean, not_a_number, shown
 from ._tables import numeric_column
 
 __all__ = ["add_late_label_flags", "late_label_columns", "read_late_labels",
@@ -32,7 +32,7 @@ def level(text: str) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+        raise not_a_number(text) from None
     if not 0.0 < value < 1.0:
         raise argparse.ArgumentTypeError(f"must be in (0, 1); got {text}")
     return value
@@ -168,7 +168,7 @@ def _nonnegative(text: str) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+        raise not_a_number(text) from None
     if not (np.isfinite(value) and value >= 0):
         raise argparse.ArgumentTypeError(f"must be a finite number >= 0; got {text}")
     return value

@@ -23,6 +23,7 @@ from ._common import (
     check_ranking,
     check_row_count,
     clean,
+    not_a_number,
     read_weights,
     require,
     shown,
@@ -55,7 +56,7 @@ def _finite(text: str) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{plain(text)!r} is not a number") from None
+        raise not_a_number(text) from None
     if not math.isfinite(value):
         raise argparse.ArgumentTypeError(f"must be a finite number; got {text}")
     return value
