@@ -28,7 +28,6 @@ from ._common import (
     check_ranking,
     check_row_count,
     clean,
-    read_weights,
     shown,
     whole_number,
 )
@@ -41,7 +40,7 @@ from ._promise_flags import (
     late_label_summary,
     read_late_labels,
 )
-from ._tables import numeric_column, probability_column, read_labels, read_table
+from ._tables import numeric_column, probability_column, read_labels, read_table, read_weights
 
 __all__ = [
     "register", "read_labels", "read_scores", "write_table", "add_scale_flag", "whole_number",

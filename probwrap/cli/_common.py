@@ -24,7 +24,7 @@ __all__ = [
     "TABLE_SUFFIXES", "table_kind", "one_line", "warn_line", "check_ranking", "check_row_count",
     "FEW_ROWS", "MIN_RESAMPLES", "add_positive_label_flag", "add_format_flag",
     "add_resamples_flag", "whole_number", "add_seed_flag", "MAX_SEED", "add_weight_flag",
-    "read_weights", "weight_summary", "not_a_number",
+    "weight_summary", "not_a_number", "FREQUENCY_WEIGHT_LIMIT",
 ]
 
 
@@ -233,38 +233,6 @@ def add_weight_flag(parser: argparse.ArgumentParser) -> None:
         help="column of row weights: numbers >= 0, not all 0 (e.g. how many parcels a row "
         "stands for); every number is then weighted by them",
     )
-
-
-def read_weights(frame: Any, column: str | None, path: str | Path,
-                 verb: str) -> np.ndarray | None:
-    """The ``--weight-column`` as finite weights >= 0 with a positive sum, or None; a
-    DataError names the file, the column and the first bad row."""
-    if column is None:
-        return None
-    from ._tables import numeric_column
-
-    w = numeric_column(frame, column, path, flag="--weight-column")
-    bad = w < 0
-    if bad.any():
-        row = int(np.flatnonzero(bad)[0])
-        raise DataError(f"{path}: column {shown(column)}, row {row + 2} (counting the header as "
-                        f"row 1): {shown(w[row])} is a negative weight (--weight-column)")
-    if not np.any(w > 0):
-        raise DataError(f"{path}: column {shown(column)} (--weight-column) holds no positive "
-                        "weight")
-    n_rows = int(np.count_nonzero(w))
-    with np.errstate(over="ignore"):
-        total = float(w.sum())
-    if total > FREQUENCY_WEIGHT_LIMIT * n_rows:
-        # weights summing to at least the rows are row frequencies (the library's contract):
-        # all weights 1e12 made cutoff's paired test see 9e13 rows and keep another cutoff
-        warn_line(verb, (
-            f"{path}: the weights of column {shown(column)} (--weight-column) average "
-            f"{total / n_rows:.3g} per row; weights are read as row frequencies (a row of "
-            "weight 2 counts as two identical rows), so the tests and the choices between "
-            f"rules treat the file as {total:.3g} rows. If they are not counts (amounts, "
-            "survey weights), divide them by their mean"))
-    return w
 
 
 def weight_summary(column: str, w: np.ndarray) -> dict[str, Any]:

@@ -27,7 +27,6 @@ from ._common import (
     check_ranking,
     check_row_count,
     not_a_number,
-    read_weights,
     shown,
     weight_summary,
 )
@@ -41,7 +40,7 @@ from ._promise_flags import (
     late_label_summary,
     read_late_labels,
 )
-from ._tables import read_labels, read_table
+from ._tables import read_labels, read_table, read_weights
 
 __all__ = ["register", "cutoff_summary"]
 

@@ -24,7 +24,6 @@ from ._common import (
     check_row_count,
     clean,
     not_a_number,
-    read_weights,
     require,
     shown,
     warn_line,
@@ -43,7 +42,7 @@ from ._promise_flags import (
     promise_summary,
     read_late_labels,
 )
-from ._tables import numeric_column, probability_column, read_labels, read_table
+from ._tables import numeric_column, probability_column, read_labels, read_table, read_weights
 
 __all__ = ["register"]
 

@@ -15,9 +15,19 @@ from typing import Any
 
 import numpy as np
 
-from ._common import DataError, clean, one_line, require, shown, table_kind
+from ._common import (
+    FREQUENCY_WEIGHT_LIMIT,
+    DataError,
+    clean,
+    one_line,
+    require,
+    shown,
+    table_kind,
+    warn_line,
+)
 
-__all__ = ["read_table", "no_column", "numeric_column", "probability_column", "read_labels"]
+__all__ = ["read_table", "no_column", "numeric_column", "probability_column", "read_labels",
+           "read_weights"]
 
 
 def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = False,
@@ -417,3 +427,33 @@ def read_labels(
     y = (values == pos).astype(np.intp)
     plain = [v.item() if hasattr(v, "item") else v for v in (neg, pos)]
     return y, plain
+
+
+def read_weights(frame: Any, column: str | None, path: str | Path,
+                 verb: str) -> np.ndarray | None:
+    """The ``--weight-column`` as finite weights >= 0 with a positive sum, or None; a
+    DataError names the file, the column and the first bad row."""
+    if column is None:
+        return None
+    w = numeric_column(frame, column, path, flag="--weight-column")
+    bad = w < 0
+    if bad.any():
+        row = int(np.flatnonzero(bad)[0])
+        raise DataError(f"{path}: column {shown(column)}, row {row + 2} (counting the header as "
+                        f"row 1): {shown(w[row])} is a negative weight (--weight-column)")
+    if not np.any(w > 0):
+        raise DataError(f"{path}: column {shown(column)} (--weight-column) holds no positive "
+                        "weight")
+    n_rows = int(np.count_nonzero(w))
+    with np.errstate(over="ignore"):
+        total = float(w.sum())
+    if total > FREQUENCY_WEIGHT_LIMIT * n_rows:
+        # weights summing to at least the rows are row frequencies (the library's contract):
+        # all weights 1e12 made cutoff's paired test see 9e13 rows and keep another cutoff
+        warn_line(verb, (
+            f"{path}: the weights of column {shown(column)} (--weight-column) average "
+            f"{total / n_rows:.3g} per row; weights are read as row frequencies (a row of "
+            "weight 2 counts as two identical rows), so the tests and the choices between "
+            f"rules treat the file as {total:.3g} rows. If they are not counts (amounts, "
+            "survey weights), divide them by their mean"))
+    return w
