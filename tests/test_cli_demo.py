@@ -338,3 +338,56 @@ def test_report_verb_class_columns_bad_labels(class_files, tmp_path, capsys):
     assert main(args) == 1
     err = capsys.readouterr().err
     assert "bad.csv" in err and "row 6" in err and "'lost'" in err
+
+
+def test_demo_writes_the_files_the_command_line_page_uses(tmp_path, capsys):
+    """The docs' examples run as written on the demo's folder: heldout.csv / this-week.csv /
+    winter.csv hold the summer-trained logistic regression's scores (recomputed here with
+    scikit-learn directly), the outcome and the size class."""
+    import json
+
+    import pandas as pd
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    from probwrap.datasets import make_parcels
+
+    assert main(["demo", "--out", str(tmp_path), "--n-train", "2000", "--seed", "0"]) == 0
+    assert "heldout.csv, this-week.csv, winter.csv" in capsys.readouterr().out
+    held = pd.read_csv(tmp_path / "heldout.csv")
+    week = pd.read_csv(tmp_path / "this-week.csv")
+    assert list(held.columns) == ["parcel", "size", "risk", "damaged"]
+    assert list(week.columns) == ["parcel", "size", "risk"]
+    summer, test = make_parcels(2000, random_state=0), make_parcels(1000, random_state=1)
+    winter = make_parcels(1000, season="winter", random_state=2)
+    model = make_pipeline(StandardScaler(), LogisticRegression(max_iter=1000)).fit(
+        summer.data, summer.target)
+    np.testing.assert_allclose(held["risk"], model.predict_proba(test.data)[:, 1], atol=1e-6)
+    np.testing.assert_allclose(week["risk"], model.predict_proba(winter.data)[:, 1], atol=1e-6)
+    assert (held["damaged"] == "yes").tolist() == (test.target == 1).tolist()
+    assert set(held["size"]) == {"light", "medium", "heavy"}
+    # the pages' commands, in the demo's folder
+    import os
+
+    here = os.getcwd()
+    os.chdir(tmp_path)
+    try:
+        assert main(["cutoff", "--scores", "heldout.csv", "--score-column", "risk",
+                     "--label-column", "damaged", "--positive-label", "yes", "--cost-fp", "3",
+                     "--cost-fn", "40", "--capacity", "0.1", "--resamples", "20"]) == 0
+        capsys.readouterr()
+        assert main(["prevalence", "--unlabelled", "this-week.csv", "--score-column", "risk",
+                     "--reference", "heldout.csv", "--label-column", "damaged",
+                     "--positive-label", "yes", "--resamples", "20", "--format", "json"]) == 0
+        found = json.loads(capsys.readouterr().out)
+        assert found["source_prevalence"] == pytest.approx(np.mean(test.target), abs=1e-12)
+        assert found["n_rows"] == 1000 and found["n_reference_rows"] == 1000
+        assert found["interval"][0] <= found["prevalence"] <= found["interval"][1]
+        assert main(["report", "--scores", "heldout.csv", "--score-column", "risk",
+                     "--label-column", "damaged", "--positive-label", "yes", "--cost-fp", "3",
+                     "--cost-fn", "40", "--group-column", "size", "--resamples", "20",
+                     "--out", "report-by-size.html"]) == 0
+    finally:
+        os.chdir(here)
+    assert 'data-group="heavy"' in (tmp_path / "report-by-size.html").read_text(encoding="utf-8")

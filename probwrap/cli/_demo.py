@@ -30,7 +30,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         description="Train a damage-risk model on invented summer parcels, calibrate it, choose "
         "inspect/ship actions under costs (inspection 3, damaged delivery 40) and a bench "
         "capacity, estimate the winter prevalence from unlabelled parcels, move the cutoff, "
-        "print a summary and write DIR/report.html.",
+        "print a summary and write DIR/report.html, with the score files the other verbs' "
+        "examples use (DIR/heldout.csv, DIR/this-week.csv, DIR/winter.csv).",
     )
     parser.add_argument("--out", required=True, metavar="DIR", help="directory for report.html")
     parser.add_argument("--n-train", type=whole_number(500), default=4000, metavar="N",
@@ -101,13 +102,51 @@ def run_demo(
     )
     step("writing the report")
     target = _write_page(Path(out), page)
+    files = _write_example_files(Path(out), base, summer, test, winter)
     rules = {r.key: r for r in content.rules}
     return {
         "content": content,
         "true_winter_prevalence": float(np.mean(winter.target)),
         "rules": rules,
         "report": target,
+        "files": files,
     }
+
+
+#: weight limits (kg) of the demo's size classes, for the files' "size" column
+SIZE_LIMITS = (1.5, 6.0)
+SIZE_NAMES = ("light", "medium", "heavy")
+
+
+def _write_example_files(out: Path, base: Any, summer: Any, test: Any, winter: Any) -> list[Path]:
+    """The score files the command-line pages use, next to the report.
+
+    ``heldout.csv``: the held-out summer parcels with the uncalibrated model's ``risk``, the
+    outcome ``damaged`` (yes/no) and the parcel's ``size`` class; ``this-week.csv`` and
+    ``winter.csv``: the winter parcels with ``risk`` and ``size`` and no outcome, in arrival
+    order. The model is the demo's logistic regression fitted on the summer training parcels,
+    so ``probwrap calibrate fit --scores heldout.csv ...`` calibrates the same scores the wrappers
+    calibrated.
+    """
+    from sklearn.base import clone
+
+    model = clone(base).fit(summer.data, summer.target)
+
+    def lines(bunch: Any, with_outcome: bool) -> str:
+        risk = model.predict_proba(bunch.data)[:, 1]
+        size = np.asarray(SIZE_NAMES)[np.searchsorted(SIZE_LIMITS, bunch.data[:, 0],
+                                                      side="right")]
+        head = "parcel,size,risk" + (",damaged" if with_outcome else "")
+        rows = [f"{i + 1},{z},{r:.6f}" + ((",yes" if t else ",no") if with_outcome else "")
+                for i, (z, r, t) in enumerate(zip(size, risk, bunch.target, strict=True))]
+        return "\n".join([head, *rows]) + "\n"
+
+    written = []
+    for name, bunch, outcome in (("heldout.csv", test, True), ("this-week.csv", winter, False),
+                                 ("winter.csv", winter, False)):
+        write_text(out / name, lines(bunch, outcome))
+        written.append(out / name)
+    return written
 
 
 def _report_progress(stages: Stages | None) -> dict:
@@ -324,4 +363,6 @@ def _handler(args: argparse.Namespace) -> int:
         print(f"  winter cutoff              {c.adapted_cutoff:.4f}")
     print(f"  report                     {result['report']}  "
           f"({time.perf_counter() - start:.1f} s)")
+    print("  files for the other verbs  " + ", ".join(p.name for p in result["files"])
+          + " (see the command-line page)")
     return 0
