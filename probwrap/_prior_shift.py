@@ -215,7 +215,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         two classes, an interval that excludes ``source_prior_`` while the shift test does not
         reject at its level is widened to reach it, with a
         :class:`~probwrap.shift.PriorIntervalConflictWarning` (EM's estimate then moved
-        further than the rows support; see docs/prior_shift.md).
+        further than the rows support; see docs/prior_shift.md). It does not carry how much a
+        base model that the wrapper refits on the labelled rows moves with their draw: with a
+        high-variance model on a few hundred rows it can under-cover by up to about 10 points
+        (docs/prior_shift.md, "A base model refit on the labelled rows"); a base model fitted
+        on other rows and frozen does not have that error.
     shift_pvalue_ : float
         p-value of the two-sample score test of "no shift" (the ``adapt`` rows against the
         labelled rows, whose class shares and calibration are themselves estimates; F
