@@ -46,17 +46,20 @@ from ._common import (
     check_row_count,
     not_a_number,
     warn_line,
+    weight_summary,
     whole_number,
 )
 from ._cutoff import _level
 from ._prevalence_numbers import (
     batch_alarm_json,
+    effective_rows,
+    kish_scaled,
     prevalence_from_reference,
     prevalence_from_source,
 )
 from ._progress import Stages
 from ._promise_flags import add_alarm_flags, alarm_settings
-from ._tables import read_labels, read_table
+from ._tables import read_labels, read_table, read_weights
 
 __all__ = ["register", "prevalence_from_source", "prevalence_from_reference", "batch_alarm_json"]
 
@@ -134,7 +137,7 @@ _NUMBER = re.compile(r"\d+(?:\.\d+)?(?:e[-+]?\d+)?")
 
 
 def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
-              seed: int | None) -> list[dict[str, Any]]:
+              seed: int | None, weights: np.ndarray | None = None) -> list[dict[str, Any]]:
     """Each batch's estimate. A warning met in a batch is warned once per kind (messages that
     differ only in their numbers), naming the batch it is shown for and how many more had it:
     it said "250 effective unlabelled rows" without saying of which batch."""
@@ -145,7 +148,8 @@ def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
         mask = inverse.ravel() == b
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            res = estimate(proba[mask], None if seed is None else seed + 1 + i)
+            res = estimate(proba[mask], None if weights is None else weights[mask],
+                           None if seed is None else seed + 1 + i)
         for w in caught:
             key = (w.category, _NUMBER.sub("#", str(w.message)))
             if key in kinds:
@@ -156,6 +160,8 @@ def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
                      "prevalence": res["prevalence"], "interval": res["interval"],
                      "shift_statistic": res["shift_statistic"],
                      "shift_pvalue": res["shift_pvalue"]})
+        if weights is not None:  # the alarm counts a weighted batch by Kish's size
+            rows[-1]["effective_rows"] = effective_rows(weights[mask], int(mask.sum()))
     for (category, _), (message, batch, batches) in kinds.items():
         more = len(batches) - 1
         also = f" (and {more} more batch{'es' if more > 1 else ''} alike)" if more else ""
@@ -222,9 +228,14 @@ def _run(args: argparse.Namespace) -> int:
     with Stages("prevalence", names) as stages:
         stages.start("reading")
         # batch labels as written: "01" and "1" are two batches, as group columns are read
-        frame = read_table(args.unlabelled, exact=[args.score_column],
+        frame = read_table(args.unlabelled, exact=[args.score_column,
+                                                   *([args.weight_column] if args.weight_column
+                                                     else [])],
                            text=[] if args.batch_column is None else [args.batch_column])
         proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale)
+        weights = read_weights(frame, args.weight_column, args.unlabelled, "prevalence",
+                               relative=True)
+        ref_weights = None
         batch_labels = _batch_labels(frame, args, proba.shape[0])
         if batch_labels is not None and np.unique(batch_labels).shape[0] < 2:
             flag = (f"--batch-size {args.batch_size} is not below the file's {proba.shape[0]} rows"
@@ -240,9 +251,21 @@ def _run(args: argparse.Namespace) -> int:
         settings = {
             "n_resamples": args.resamples, "confidence_level": args.confidence, "seed": args.seed,
         }
+        ref_settings: dict[str, Any] = {}
         if args.reference is not None:
             ref_column = args.reference_score_column or args.score_column
-            ref = read_table(args.reference, exact=[ref_column])
+            ref_weight_column = args.reference_weight_column
+            ref = read_table(args.reference, exact=[ref_column, *([ref_weight_column]
+                                                                  if ref_weight_column else [])])
+            ref_weights = read_weights(ref, ref_weight_column, args.reference, "prevalence",
+                                       flag="--reference-weight-column", relative=True)
+            if (ref_weight_column is None and args.weight_column is not None
+                    and args.weight_column in ref.columns):
+                warn_line("prevalence", (
+                    f"{args.reference}: has a column {plain(args.weight_column)!r} too, but "
+                    "--weight-column weights only the unlabelled rows; the reference rows are "
+                    "unweighted. Add --reference-weight-column "
+                    f"{plain(args.weight_column)!r} to weight them"))
             ref_scores = read_scores(
                 ref, ref_column, args.reference, scale=args.scale,
                 flag="--reference-score-column" if args.reference_score_column
@@ -253,37 +276,46 @@ def _run(args: argparse.Namespace) -> int:
             ref_y, labels = read_labels(
                 ref, args.label_column, args.reference, positive=args.positive_label
             )
+            ref_settings = {"reference_weight": kish_scaled(ref_weights)}
         check_row_count("prevalence", proba.shape[0], args.unlabelled, "unlabelled rows")
         if args.reference is not None:
             check_row_count("prevalence", ref_scores.shape[0], args.reference, "reference rows")
-            check_ranking("prevalence", ref_scores, ref_y, labels, args.reference)
+            judged = np.ones(ref_y.shape[0], bool) if ref_weights is None else ref_weights > 0
+            check_ranking("prevalence", ref_scores[judged], ref_y[judged], labels,
+                          args.reference)
         stages.start(names[1])
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             try:
                 if args.reference is None:
-                    out = prevalence_from_source(proba, args.source_prevalence, **settings)
+                    out = prevalence_from_source(proba, args.source_prevalence,
+                                                 sample_weight=kish_scaled(weights),
+                                                 **settings)
                 else:
                     out = prevalence_from_reference(
                         proba, ref_scores, ref_y, method=args.method,
-                        recalibrate=not args.no_recalibration, **settings,
+                        recalibrate=not args.no_recalibration,
+                        sample_weight=kish_scaled(weights),
+                        **ref_settings, **settings,
                     )
                     out["labels"] = {"negative": labels[0], "positive": labels[1]}
                 if batch_labels is not None:
-                    def one(p: np.ndarray, seed: int | None) -> dict[str, Any]:
-                        kw = {**settings, "seed": seed}
+                    def one(p: np.ndarray, w: np.ndarray | None,
+                            seed: int | None) -> dict[str, Any]:
+                        kw = {**settings, "seed": seed, "sample_weight": kish_scaled(w)}
                         if args.reference is None:
                             return prevalence_from_source(p, args.source_prevalence, **kw)
                         return prevalence_from_reference(
                             p, ref_scores, ref_y, method=args.method,
-                            recalibrate=not args.no_recalibration, **kw)
+                            recalibrate=not args.no_recalibration, **ref_settings, **kw)
 
-                    out["batches"] = _by_batch(one, proba, batch_labels, args.seed)
+                    out["batches"] = _by_batch(one, proba, batch_labels, args.seed, weights)
                     out["alarm"] = batch_alarm_json(
                         out["batches"], out["source_prevalence"],
                         confidence_level=args.confidence, reference=args.alarm_reference,
                         decision_interval=args.alarm_decision_interval,
-                        labelled_rows=float(out.get("n_reference_rows", np.inf)))
+                        labelled_rows=(np.inf if args.reference is None else
+                                       effective_rows(ref_weights, ref_y.shape[0])))
             except (ValueError, FloatingPointError, ZeroDivisionError) as exc:
                 raise DataError(
                     f"{args.unlabelled}: the prevalence cannot be estimated ({exc})"
@@ -294,6 +326,10 @@ def _run(args: argparse.Namespace) -> int:
             "class index 0", f"the class {names['negative']!r}").replace(
             "class index 1", f"the class {names['positive']!r}")
     report_warnings("prevalence", caught)
+    if weights is not None:
+        out["weights"] = weight_summary(args.weight_column, weights)
+    if ref_weights is not None:
+        out["reference_weights"] = weight_summary(args.reference_weight_column, ref_weights)
     if not all(np.isfinite(v) for v in (out["prevalence"], out["shift_statistic"])):
         raise DataError(
             f"{args.unlabelled}: the prevalence cannot be estimated (the computation did not "
@@ -303,6 +339,11 @@ def _run(args: argparse.Namespace) -> int:
         print(json.dumps(out, indent=2, allow_nan=False))
     else:
         print(_text(out, args.unlabelled, args.confidence))
+        for key, which in (("weights", "unlabelled"), ("reference_weights", "reference")):
+            if key in out:
+                ws = out[key]
+                print(f"  {which} weights: column {plain(ws['column'])!r}, sum {ws['sum']:.6g} "
+                      f"({ws['effective_rows']:.1f} effective rows, Kish)")
     return 0
 
 
@@ -337,6 +378,17 @@ def register(subparsers: Any) -> None:
     )
     add_positive_label_flag(parser, "reference label")
     parser.add_argument(
+        "--weight-column", metavar="W", default=None,
+        help="column of row weights of the --unlabelled file (numbers >= 0, not all 0; only "
+        "their ratios matter: counted by Kish's effective size); the reference file's rows "
+        "take --reference-weight-column",
+    )
+    parser.add_argument(
+        "--reference-weight-column", metavar="W", default=None,
+        help="with --reference: column of row weights of the reference file (numbers >= 0, "
+        "not all 0); --weight-column weights only the unlabelled file",
+    )
+    parser.add_argument(
         "--method", choices=("em", "bbse", "acc", "pacc"), default="em",
         help="maximum likelihood (em, default), black-box shift estimation (bbse), adjusted "
         "classify-and-count (acc) or its probabilistic form (pacc); all but em need --reference",
@@ -370,9 +422,11 @@ def register(subparsers: Any) -> None:
             if args.method != "em":
                 parser.error(f"--method {args.method} needs --reference (a labelled file)")
             if (args.label_column is not None or args.no_recalibration
-                    or args.positive_label is not None):
+                    or args.positive_label is not None
+                    or args.reference_weight_column is not None):
                 parser.error(
-                    "--label-column, --positive-label and --no-recalibration go with --reference"
+                    "--label-column, --positive-label, --no-recalibration and "
+                    "--reference-weight-column go with --reference"
                 )
         elif args.label_column is None:
             parser.error("--reference needs --label-column")

@@ -14,7 +14,8 @@ import numpy as np
 from ._progress import progress
 
 __all__ = ["prevalence_from_source", "prevalence_from_reference", "batch_alarm_json",
-           "two_columns", "result_dict"]
+           "two_columns", "result_dict", "effective_rows",
+           "kish_scaled"]
 
 
 def two_columns(p: np.ndarray) -> np.ndarray:
@@ -39,12 +40,15 @@ def prevalence_from_source(
     n_resamples: int = 200,
     confidence_level: float = 0.95,
     seed: int | None = 0,
+    sample_weight: np.ndarray | None = None,
 ) -> dict[str, Any]:
     """EM prevalence of unlabelled rows whose probabilities hold for ``source_prevalence``.
 
-    The interval is a percentile bootstrap of the unlabelled rows, widened where needed to
-    contain the Clopper-Pearson interval of as many labelled rows (as
-    :meth:`probwrap.shift.PriorEstimator.estimate` does).
+    The interval is a percentile bootstrap of the unlabelled rows (each resampled row keeps
+    its weight), widened where needed to contain the Clopper-Pearson interval of as many
+    labelled rows as Kish's effective size of ``sample_weight`` (as
+    :meth:`probwrap.shift.PriorEstimator.estimate` does). Weights are relative: scaling them
+    all changes nothing.
 
     Examples
     --------
@@ -61,8 +65,9 @@ def prevalence_from_source(
 
     p2 = two_columns(proba)
     src = np.array([1.0 - source_prevalence, source_prevalence])
-    point = em_prior(p2, src)
-    test = shift_test(p2, src)
+    w = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    point = em_prior(p2, src, sample_weight=w)
+    test = shift_test(p2, src, sample_weight=w)
     if not (np.all(np.isfinite(point.prior)) and np.isfinite(test.statistic)):
         raise ValueError(
             f"with source prevalence {source_prevalence:g} the estimate is not a finite number; "
@@ -78,11 +83,16 @@ def prevalence_from_source(
             warnings.simplefilter("always")
             for b in progress(range(n_resamples), desc="bootstrap", total=n_resamples):
                 counts = np.bincount(rng.randint(0, n, size=n), minlength=n).astype(float)
+                if w is not None:
+                    counts = counts * w
+                    if not np.any(counts > 0):  # every drawn row has weight 0
+                        draws[b] = np.nan
+                        continue
                 draws[b] = em_prior(p2, src, sample_weight=counts, init=init).prior[1]
         _warn_per_resample(caught, n_resamples)
         alpha = 1.0 - confidence_level
-        lo, hi = np.quantile(draws, [alpha / 2, 1 - alpha / 2])
-        cp = binomial_interval(point.prior[1], float(n), confidence_level)
+        lo, hi = np.nanquantile(draws, [alpha / 2, 1 - alpha / 2])
+        cp = binomial_interval(point.prior[1], effective_rows(w, n), confidence_level)
         out["interval"] = [
             float(min(lo, cp[0], point.prior[1])), float(max(hi, cp[1], point.prior[1]))
         ]
@@ -99,8 +109,13 @@ def prevalence_from_reference(
     n_resamples: int = 200,
     confidence_level: float = 0.95,
     seed: int | None = 0,
+    sample_weight: np.ndarray | None = None,
+    reference_weight: np.ndarray | None = None,
 ) -> dict[str, Any]:
     """Prevalence of unlabelled rows by :class:`probwrap.shift.PriorEstimator`.
+
+    ``sample_weight`` weights the unlabelled rows (``estimate``), ``reference_weight`` the
+    reference rows (``fit``); the estimator counts both by Kish's effective size.
 
     Examples
     --------
@@ -122,8 +137,8 @@ def prevalence_from_reference(
         n_resamples=n_resamples,
         confidence_level=confidence_level,
         random_state=seed,
-    ).fit(two_columns(ref_proba), ref_y)
-    res = est.estimate(two_columns(proba))
+    ).fit(two_columns(ref_proba), ref_y, sample_weight=reference_weight)
+    res = est.estimate(two_columns(proba), sample_weight=sample_weight)
     # the estimator's two-sample score test (it carries the reference rows' error too)
     test = ShiftTestResult(res.shift_statistic, res.shift_pvalue, 1)
     out = result_dict(
@@ -153,7 +168,8 @@ def batch_alarm_json(
     batch is compared with (``np.inf`` for a source prevalence taken as exact); the quoted
     in-control run length is the one reached with probability 0.9 over their draw
     (:func:`probwrap.shift.baseline_error_run_length`). The intervals only serve the estimate
-    of how fast the chart detects a shift.
+    of how fast the chart detects a shift. A batch's size is its ``effective_rows`` (Kish's
+    size of weighted rows) when given, else ``n_rows``.
 
     Examples
     --------
@@ -182,7 +198,8 @@ def batch_alarm_json(
         if np.all(width > 0):
             se = width / (2.0 * norm.ppf(0.5 + confidence_level / 2.0))
     labels = [b["batch"] for b in batches]
-    a = alarm_on_scores(z, labels, np.array([b.get("n_rows", 1) for b in batches], dtype=float),
+    a = alarm_on_scores(z, labels, np.array([b.get("effective_rows", b.get("n_rows", 1)) for b in batches],
+                                         dtype=float),
                         labelled_rows=labelled_rows, baseline=float(source_prevalence),
                         standard_error=se, reference=reference,
                         decision_interval=decision_interval)
@@ -206,6 +223,26 @@ def batch_alarm_json(
         "batches_to_detect": a.batches_to_detect,
         "warnings": list(a.warnings),
     }
+
+
+def effective_rows(w: np.ndarray | None, n: int) -> float:
+    """Kish's effective sample size ``(sum w)^2 / sum w^2`` of ``w`` (``n`` without weights)."""
+    if w is None:
+        return float(n)
+    u = w / w.max()
+    return float(u.sum() ** 2 / (u @ u))
+
+
+def kish_scaled(w: np.ndarray | None) -> np.ndarray | None:
+    """``w`` rescaled to sum to Kish's effective size: the same ratios, at the scale where
+    the library reads them as relative everywhere. (The reference rows' recalibration reads
+    weights that sum to at least the rows as row frequencies; on MASS birthwt, weights times
+    1000 moved the estimate from 0.33432 to 0.33472.) ``prevalence`` promises that only the
+    ratios of the weights matter."""
+    if w is None:
+        return None
+    u = w / w.max()
+    return u * (u.sum() / (u @ u))
 
 
 def result_dict(prev, converged, method, n, source, test) -> dict[str, Any]:

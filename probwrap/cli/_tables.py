@@ -430,20 +430,28 @@ def read_labels(
 
 
 def read_weights(frame: Any, column: str | None, path: str | Path,
-                 verb: str) -> np.ndarray | None:
+                 verb: str, *, flag: str = "--weight-column",
+                 relative: bool = False) -> np.ndarray | None:
     """The ``--weight-column`` as finite weights >= 0 with a positive sum, or None; a
-    DataError names the file, the column and the first bad row."""
+    DataError names the file, the column, the first bad row and ``flag``. ``relative``: the
+    verb counts the weights by Kish's effective size (only their ratios matter), so large
+    weights draw no warning."""
     if column is None:
         return None
-    w = numeric_column(frame, column, path, flag="--weight-column")
+    try:
+        w = numeric_column(frame, column, path, flag=flag)
+    except DataError as exc:  # a missing or non-number weight: say which option read it
+        text = str(exc)
+        raise DataError(text if flag in text else f"{text} ({flag})") from None
     bad = w < 0
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
         raise DataError(f"{path}: column {shown(column)}, row {row + 2} (counting the header as "
-                        f"row 1): {shown(w[row])} is a negative weight (--weight-column)")
+                        f"row 1): {shown(w[row])} is a negative weight ({flag})")
     if not np.any(w > 0):
-        raise DataError(f"{path}: column {shown(column)} (--weight-column) holds no positive "
-                        "weight")
+        raise DataError(f"{path}: column {shown(column)} ({flag}) holds no positive weight")
+    if relative:
+        return w
     n_rows = int(np.count_nonzero(w))
     with np.errstate(over="ignore"):
         total = float(w.sum())
