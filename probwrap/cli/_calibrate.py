@@ -41,6 +41,7 @@ from ._promise_flags import (
     read_late_labels,
 )
 from ._tables import numeric_column, probability_column, read_labels, read_table, read_weights
+from ._wording import cli_wording
 
 __all__ = [
     "register", "read_labels", "read_scores", "write_table", "add_scale_flag", "whole_number",
@@ -78,7 +79,7 @@ def report_warnings(verb: str, caught: list) -> None:
     """Print each distinct library warning once, on one line of stderr (no source lines)."""
     seen: set[str] = set()
     for w in caught:
-        message = clean(" ".join(str(w.message).split()))
+        message = clean(cli_wording(" ".join(str(w.message).split())))
         if message not in seen:
             seen.add(message)
             print(f"probwrap {verb}: warning: {message}", file=sys.stderr)

@@ -1,0 +1,75 @@
+"""Library warnings in the words of the command line.
+
+The verbs pass the library's warnings through to stderr. Some name what only a Python caller
+can change (``clip``, ``prior_strength``, ``max_iter``, ``smooth_targets``), a function's
+docstring, or arguments by their Python names (``sample_weight``, ``cv``, ``y_prob``); a
+command-line user can act on none of these. :func:`cli_wording` rewrites them to the flags the
+user has, or says that no flag changes it.
+"""
+
+from __future__ import annotations
+
+import re
+
+__all__ = ["cli_wording"]
+
+_WEIGHTS = "the row weights (--weight-column, or the late-label weights)"
+
+#: (pattern, replacement), applied in order
+_RULES: list[tuple[re.Pattern[str], str]] = [(re.compile(a), b) for a, b in [
+    # metrics that floor probabilities at 0 and 1 (log loss, calibration slope)
+    (r"give the observed class a probability below `clip`; they were moved to (\S+) "
+     r"\(see the `clip` note in the docstring\)\.",
+     r"give the observed class a probability below \1 (a score of 0 for what happened would "
+     r"make the log loss infinite); they were moved to \1. Scores of exactly 0 or 1 claim a "
+     r"certainty the rows rarely bear out: `probwrap calibrate fit` maps them inside (0, 1)."),
+    (r"of `y_prob` lie closer than `clip` to 0 or 1; they were moved to (\S+) "
+     r"\(see the `clip` note in the docstring\)\.",
+     r"of the scores lie closer than \1 to 0 or 1, where their log-odds are infinite; they "
+     r"were moved to \1 from the edge. Scores of exactly 0 or 1 claim a certainty the rows "
+     r"rarely bear out: `probwrap calibrate fit` maps them inside (0, 1)."),
+    (r"\s*\(see the `clip` note in the docstring\)", ""),
+    (r"The classes in `y_true` do not overlap in logit\(`y_prob`\)",
+     "The two labels do not overlap in the log-odds of the scores"),
+    # prior shift: settings the command line does not expose
+    (r"The reported prior is shrunk toward the source prior \(prior_strength\);",
+     "The reported prevalence is shrunk toward the source prevalence (by the estimator's "
+     "default pseudo-rows; no option changes it);"),
+    (r"within max_iter=(\d+) (?:iterations|corrections)", r"within \1 iterations"),
+    (r"raise `max_iter`, or use `prior_strength`\.|Raise `max_iter`, or use `prior_strength`\.",
+     "no option changes the iterations: read the interval rather than the point estimate."),
+    # weights
+    (r"every `sample_weight` is a multiple of", "every row weight (--weight-column) is a "
+     "multiple of"),
+    (r"`sample_weight` sums to less than the number of rows(?: it weights)?, so (?:it|the "
+     r"weights) cannot be row frequencies",
+     _WEIGHTS + " sum to less than the number of rows, so they cannot be row frequencies"),
+    (r"(cannot be row frequencies); it was rescaled", r"\1; they were rescaled"),
+    (r"`sample_weight`", _WEIGHTS),
+    # folds and maps
+    (r"CalibrationWrapper\(method='auto'\): `cv`=(\d+) asks for more folds",
+     r"--method auto: --folds \1 asks for more folds"),
+    (r"`scores` separate the two classes perfectly", "the scores separate the two labels "
+     "perfectly"),
+    (r"Use smooth_targets=True for a finite fit\.",
+     "The file cannot tell how steep the map should be: --method auto chooses by "
+     "cross-validated log loss, and more rows near the boundary help."),
+    (r"Prefer PlattMap here\.", "Prefer --method platt here."),
+    (r"\bBetaMap keeps", "the beta map keeps"),
+    (r"\bPlattMap keeps", "Platt's map keeps"),
+    (r"\b(?:CalibrationWrapper|guaranteed_cutoff): ", ""),
+]]
+
+
+def cli_wording(message: str) -> str:
+    """``message`` with library-only names turned into the command line's words.
+
+    Examples
+    --------
+    >>> print(cli_wording("CalibrationWrapper(method='auto'): `cv`=10 asks for more folds "
+    ...                   "than the smallest class has rows (4)"))
+    --method auto: --folds 10 asks for more folds than the smallest class has rows (4)
+    """
+    for pattern, replacement in _RULES:
+        message = pattern.sub(replacement, message)
+    return message
