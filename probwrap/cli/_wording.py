@@ -49,7 +49,7 @@ _RULES: list[tuple[re.Pattern[str], str]] = [(re.compile(a), b) for a, b in [
     # folds and maps
     (r"CalibrationWrapper\(method='auto'\): `cv`=(\d+) asks for more folds",
      r"--method auto: --folds \1 asks for more folds"),
-    (r"`scores` separate the two classes perfectly", "the scores separate the two labels "
+    (r"`scores` separate the two classes perfectly", "the scores separate the two classes "
      "perfectly"),
     (r"Use smooth_targets=True for a finite fit\.",
      "The file cannot tell how steep the map should be: --method auto chooses by "
