@@ -161,6 +161,9 @@ def cutoff_summary(
         "cutoff": float(res.cutoff),
         "cutoff_range": [float(res.interval[0]), float(res.interval[1])],
         "cutoff_interval": None if ci is None else [float(ci.low), float(ci.high)],
+        # True when the bootstrap percentiles fell inside the same-cost range and the interval
+        # was widened to contain it
+        "cutoff_interval_widened": None if ci is None else bool(ci.widened_to_ties),
         "confidence_level": float(confidence_level),
         "n_resamples": int(n_resamples),
         "expected_cost": float(res.cost) * unit,
@@ -286,7 +289,8 @@ def _text(out: dict[str, Any], path: str) -> str:
         # a range that reaches 1 for probabilities includes 1 (no row scores above it)
         + ("]" if out["score_scale"] == "proba" and out["cutoff_range"][1] >= 1.0 else ")"),
         f"  {level}% interval          [{out['cutoff_interval'][0]:.6g}, "
-        f"{out['cutoff_interval'][1]:.6g}]   (bootstrap, {out['n_resamples']} resamples)"
+        f"{out['cutoff_interval'][1]:.6g}]   (bootstrap, {out['n_resamples']} resamples"
+        + ("; widened to the same-cost range)" if out.get("cutoff_interval_widened") else ")")
         if out["cutoff_interval"] is not None else "  interval              not computed (--resamples 0)",
         f"  expected cost per row {out['expected_cost']:.6g}",
         f"  share flagged         {out['flagged_share']:.4g}",

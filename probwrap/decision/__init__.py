@@ -22,7 +22,7 @@ from ._cutoff import (
     check_capacity,
     search_cutoff,
 )
-from ._cutoff_interval import CutoffInterval, cutoff_interval
+from ._cutoff_interval import CutoffInterval, CutoffIntervalCoverageWarning, cutoff_interval
 from ._guarantee import (
     GUARANTEE_REQUIREMENTS,
     GuaranteedCutoff,
@@ -47,6 +47,7 @@ __all__ = [
     "ActionBudget",
     "ClassOffsetResult",
     "CutoffInterval",
+    "CutoffIntervalCoverageWarning",
     "CutoffSearchResult",
     "GuaranteeUnreachableError",
     "GuaranteedCutoff",
