@@ -109,3 +109,14 @@ def test_batches_of_dates_out_of_order_warn():
         model.monitor(Xn, batches=weeks)
         model.monitor(Xn, batches=np.where(shuffled == weeks[0], "b", "a"))  # text: no order
         model.monitor(Xn, batch_size=70)
+
+
+def test_two_sided_run_length_beyond_double_precision_is_infinite():
+    # h = 50 standard deviations: in control the chart never sounds in double precision on
+    # either side (it raised ZeroDivisionError, which stopped the report with h = 50)
+    assert cusum_run_length(0.0, reference=0.5, decision_interval=50.0,
+                            two_sided=True) == float("inf")
+    # still finite, and the two sides combined as 1 / (1/up + 1/down), where it is
+    up = cusum_run_length(0.0, reference=0.5, decision_interval=5.0)
+    assert cusum_run_length(0.0, reference=0.5, decision_interval=5.0,
+                            two_sided=True) == pytest.approx(up / 2, rel=1e-12)

@@ -217,7 +217,8 @@ def cusum_run_length(
     if two_sided:
         up = cusum_run_length(shift, reference=k, decision_interval=h, n_states=n_states)
         down = cusum_run_length(-shift, reference=k, decision_interval=h, n_states=n_states)
-        return float(1.0 / (1.0 / up + 1.0 / down))
+        rate = 1.0 / up + 1.0 / down  # both sides infinite (a wide h): never sounds either
+        return float(np.inf) if rate == 0.0 else float(1.0 / rate)
     m = int(n_states)
     w = 2.0 * h / (2.0 * m - 1.0)
     centre = np.arange(m) * w
