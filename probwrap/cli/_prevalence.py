@@ -56,6 +56,8 @@ from ._prevalence_numbers import (
     kish_scaled,
     prevalence_from_reference,
     prevalence_from_source,
+    reference_estimator,
+    source_baseline_standard_error,
 )
 from ._progress import Stages
 from ._promise_flags import add_alarm_flags, alarm_settings
@@ -167,6 +169,31 @@ def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
         also = f" (and {more} more batch{'es' if more > 1 else ''} alike)" if more else ""
         warnings.warn(f"batch {batch!r}{also}: {message}", category, stacklevel=2)
     return rows
+
+
+def _baseline_error(args: argparse.Namespace, out: dict[str, Any], proba: np.ndarray,
+                    weights: np.ndarray | None, settings: dict[str, Any],
+                    reference: tuple | None) -> float | None:
+    """Standard error of a batch of the median batch size at the source prevalence, which the
+    small-batch note measures a move in, as the HTML report does: from the reference rows
+    (:func:`probwrap.report._alarm_chart.baseline_batch_standard_error`) with ``--reference``,
+    else from the EM information of a batch at the source prevalence
+    (:func:`source_baseline_standard_error`)."""
+    from probwrap.report._alarm_chart import baseline_batch_standard_error
+
+    rows = float(np.median([b.get("effective_rows", b["n_rows"]) for b in out["batches"]]))
+    if reference is None:
+        return source_baseline_standard_error(proba, args.source_prevalence,
+                                              out["prevalence"], rows, kish_scaled(weights))
+    ref_scores, ref_y, ref_settings = reference
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the reference rows' notes were raised by the estimate
+        est = reference_estimator(ref_scores, ref_y, method=args.method,
+                                  recalibrate=not args.no_recalibration,
+                                  n_resamples=settings["n_resamples"],
+                                  confidence_level=settings["confidence_level"],
+                                  seed=settings["seed"], **ref_settings)
+    return baseline_batch_standard_error(est, rows)
 
 
 def _text(out: dict[str, Any], path: str, level: float) -> str:
@@ -315,7 +342,11 @@ def _run(args: argparse.Namespace) -> int:
                         confidence_level=args.confidence, reference=args.alarm_reference,
                         decision_interval=args.alarm_decision_interval,
                         labelled_rows=(np.inf if args.reference is None else
-                                       effective_rows(ref_weights, ref_y.shape[0])))
+                                       effective_rows(ref_weights, ref_y.shape[0])),
+                        baseline_standard_error=_baseline_error(
+                            args, out, proba, weights, settings,
+                            None if args.reference is None else
+                            (ref_scores, ref_y, ref_settings)))
             except (ValueError, FloatingPointError, ZeroDivisionError) as exc:
                 raise DataError(
                     f"{args.unlabelled}: the prevalence cannot be estimated ({exc})"

@@ -15,7 +15,7 @@ from ._progress import progress
 
 __all__ = ["prevalence_from_source", "prevalence_from_reference", "batch_alarm_json",
            "two_columns", "result_dict", "effective_rows",
-           "kish_scaled"]
+           "kish_scaled", "reference_estimator", "source_baseline_standard_error"]
 
 
 def two_columns(p: np.ndarray) -> np.ndarray:
@@ -129,15 +129,11 @@ def prevalence_from_reference(
     >>> out["prevalence"] > out["source_prevalence"], out["shift_pvalue"] < 1e-6
     (True, True)
     """
-    from probwrap.shift import PriorEstimator, ShiftTestResult
+    from probwrap.shift import ShiftTestResult
 
-    est = PriorEstimator(
-        method,
-        calibration="bcts" if recalibrate else None,
-        n_resamples=n_resamples,
-        confidence_level=confidence_level,
-        random_state=seed,
-    ).fit(two_columns(ref_proba), ref_y, sample_weight=reference_weight)
+    est = reference_estimator(ref_proba, ref_y, method=method, recalibrate=recalibrate,
+                              n_resamples=n_resamples, confidence_level=confidence_level,
+                              seed=seed, reference_weight=reference_weight)
     res = est.estimate(two_columns(proba), sample_weight=sample_weight)
     # the estimator's two-sample score test (it carries the reference rows' error too)
     test = ShiftTestResult(res.shift_statistic, res.shift_pvalue, 1)
@@ -151,6 +147,65 @@ def prevalence_from_reference(
     return out
 
 
+def reference_estimator(
+    ref_proba: np.ndarray,
+    ref_y: np.ndarray,
+    *,
+    method: str = "em",
+    recalibrate: bool = True,
+    n_resamples: int = 200,
+    confidence_level: float = 0.95,
+    seed: int | None = 0,
+    reference_weight: np.ndarray | None = None,
+) -> Any:
+    """The :class:`probwrap.shift.PriorEstimator` of ``prevalence --reference``, fitted on the
+    reference rows (``reference_weight``: their weights, read by Kish's effective size)."""
+    from probwrap.shift import PriorEstimator
+
+    return PriorEstimator(
+        method,
+        calibration="bcts" if recalibrate else None,
+        n_resamples=n_resamples,
+        confidence_level=confidence_level,
+        random_state=seed,
+    ).fit(two_columns(ref_proba), ref_y, sample_weight=reference_weight)
+
+
+def source_baseline_standard_error(
+    proba: np.ndarray,
+    source_prevalence: float,
+    pooled_prevalence: float,
+    batch_rows: float,
+    sample_weight: np.ndarray | None = None,
+) -> float | None:
+    """Standard error of the EM prevalence of a batch of ``batch_rows`` rows at the source
+    prevalence ``pi0`` (the baseline), when no labelled rows are kept (``--source-prevalence``).
+
+    The maximum-likelihood prevalence of a two-component mixture with known components has the
+    asymptotic variance ``1 / (m I)``, ``I = E[(p - pi0)^2] / (pi0 (1 - pi0))^2`` the
+    information of one row with posterior ``p`` at ``pi0`` (the score of the mixing share;
+    Titterington, Smith & Makov 1985, sec. 4.3, cited from memory). The expectation is over a
+    batch at the baseline: the pooled rows (prevalence ``pooled_prevalence``, EM) re-weighted by
+    the density ratio ``1 / (pi p / pi0 + (1 - pi) (1 - p) / (1 - pi0))``, exact under prior
+    shift. Not below the binomial ``sqrt(pi0 (1 - pi0) / m)``, the floor of the batches' own
+    intervals (Clopper-Pearson). None where it cannot be formed.
+    """
+    pi0, pi = float(source_prevalence), float(pooled_prevalence)
+    if not (0.0 < pi0 < 1.0 and 0.0 <= pi <= 1.0 and np.isfinite(batch_rows)
+            and batch_rows > 1):
+        return None
+    p = np.asarray(proba, dtype=float)
+    ratio = 1.0 / (pi * p / pi0 + (1.0 - pi) * (1.0 - p) / (1.0 - pi0))
+    weight = ratio if sample_weight is None else ratio * np.asarray(sample_weight, dtype=float)
+    if not np.all(np.isfinite(weight)) or weight.sum() <= 0:
+        return None
+    info = float(np.average(((p - pi0) / (pi0 * (1.0 - pi0))) ** 2, weights=weight))
+    floor = float(np.sqrt(pi0 * (1.0 - pi0) / batch_rows))
+    if not info > 0:
+        return None
+    return max(float(1.0 / np.sqrt(batch_rows * info)), floor)
+
+
 def batch_alarm_json(
     batches: list[dict[str, Any]],
     source_prevalence: float,
@@ -159,6 +214,7 @@ def batch_alarm_json(
     reference: float = 0.5,
     decision_interval: float = 5.0,
     labelled_rows: float = np.inf,
+    baseline_standard_error: float | None = None,
 ) -> dict[str, Any]:
     """The prevalence alarm of per-batch results, as JSON values.
 
@@ -167,9 +223,12 @@ def batch_alarm_json(
     (:func:`probwrap.shift.signed_shift_scores`). ``labelled_rows``: the reference rows every
     batch is compared with (``np.inf`` for a source prevalence taken as exact); the quoted
     in-control run length is the one reached with probability 0.9 over their draw
-    (:func:`probwrap.shift.baseline_error_run_length`). The intervals only serve the estimate
-    of how fast the chart detects a shift. A batch's size is its ``effective_rows`` (Kish's
-    size of weighted rows) when given, else ``n_rows``.
+    (:func:`probwrap.shift.baseline_error_run_length`). How fast the chart detects a shift (the
+    small-batch note) is judged, as in the HTML report, from ``baseline_standard_error``: the
+    standard error of a batch at the source prevalence (the batches' own intervals are wider
+    once the prevalence has risen); without it, from the median of the batches' own intervals.
+    A batch's size is its ``effective_rows`` (Kish's size of weighted rows) when given, else
+    ``n_rows``.
 
     Examples
     --------
@@ -201,8 +260,8 @@ def batch_alarm_json(
     a = alarm_on_scores(z, labels, np.array([b.get("effective_rows", b.get("n_rows", 1)) for b in batches],
                                          dtype=float),
                         labelled_rows=labelled_rows, baseline=float(source_prevalence),
-                        standard_error=se, reference=reference,
-                        decision_interval=decision_interval)
+                        standard_error=se, baseline_standard_error=baseline_standard_error,
+                        reference=reference, decision_interval=decision_interval)
     res = a.result
     alarms = [{"batch": labels[i], "index": int(i), "direction": "up" if d > 0 else "down"}
               for i, d in zip(res.alarms.tolist(), res.direction.tolist(), strict=True)]
@@ -221,6 +280,9 @@ def batch_alarm_json(
         "labelled_share": a.labelled_share,
         "assured_decision_interval": a.assured_decision_interval,
         "batches_to_detect": a.batches_to_detect,
+        "detection_standard_error": (
+            "baseline" if baseline_standard_error is not None else
+            "batches" if se is not None else None),
         "warnings": list(a.warnings),
     }
 
