@@ -288,7 +288,6 @@ def test_actions_equal_to_classes(three, tmp_path):
         ({"costs": {"fp": 1.0, "fn": 5.0}}, "`costs`"),
         ({"row_costs": np.zeros((5, 3, 3))}, "`row_costs`"),
         ({"class_names": ["a", "b"]}, "`class_names`"),
-        ({"batch_size": 10, "unlabelled_prob": [[0.5, 0.3, 0.2]] * 20}, "`batch_size`"),
     ],
 )
 def test_bad_input_names_argument(tmp_path, kwargs, match):

@@ -129,17 +129,23 @@ def warn_line(verb: str, message: str) -> None:
 
 
 def check_ranking(
-    verb: str, scores: np.ndarray, y: np.ndarray, labels: list[Any], path: str | Path
+    verb: str, scores: np.ndarray, y: np.ndarray, labels: list[Any], path: str | Path,
+    sample_weight: np.ndarray | None = None,
 ) -> float | None:
     """Warn when the scores rank the positive class below the other (ROC AUC < 0.5).
 
-    Returns the ROC AUC (None when one class is absent).
+    Returns the ROC AUC (None when one class is absent). ``sample_weight``: the rows' weights
+    (counts expanded to a success and a failure row per group have an unweighted AUC of 0.5
+    exactly, and a hair below it by rounding, since every score appears once with each label).
     """
     from sklearn.metrics import roc_auc_score
 
+    if sample_weight is not None:
+        keep = sample_weight > 0
+        scores, y, sample_weight = scores[keep], y[keep], sample_weight[keep]
     if np.unique(y).shape[0] < 2:
         return None
-    auc = float(roc_auc_score(y, scores))
+    auc = float(roc_auc_score(y, scores, sample_weight=sample_weight))
     if auc < 0.5:
         warn_line(
             verb,

@@ -113,7 +113,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--capacity", type=_finite, metavar="SHARE",
                         help="largest share of rows that may be acted on, in (0, 1]")
     parser.add_argument("--batch-size", type=whole_number(1), metavar="N",
-                        help="also estimate the prevalence per batch of N unlabelled rows")
+                        help="also estimate the prevalence (class shares with --class-columns) "
+                        "per batch of N unlabelled rows, with a prevalence alarm (one per "
+                        "class with --class-columns)")
     parser.add_argument("--bins", type=_bins, default=10, metavar="K",
                         help=f"reliability bins (default 10, at most {MAX_BINS})")
     add_resamples_flag(parser, allow_zero=False)
@@ -122,6 +124,11 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         "with calibration, scores and the rule's error rates (binary) or "
                         "action shares (several classes) and cost per group, largest gaps "
                         "first")
+    parser.add_argument("--cell-column", metavar="C",
+                        help="column naming the group of trials each row belongs to, for "
+                        "outcomes that arrive as k of n (a success row and a failure row per "
+                        "group, weighted by --weight-column): every bootstrap interval then "
+                        "resamples whole groups, and the page gives the groups' dispersion")
     add_alarm_flags(parser)
     add_guarantee_flags(parser)
     add_late_label_flags(parser)
@@ -165,8 +172,8 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
                      "once; name each class's column once")
     if any(getattr(args, f"cost_{k}") is not None for k in ("fp", "fn")):
         parser.error("with --class-columns give costs as --cost-matrix, not --cost-fp/--cost-fn")
-    if args.batch_size is not None:
-        parser.error("--batch-size is available for binary score files only")
+    if args.batch_size is not None and args.unlabelled is None:
+        parser.error("--batch-size needs --unlabelled")
     if args.weight_column is not None:
         parser.error("--weight-column is available for binary score files only (--score-column)")
     if args.unlabelled_score_column is not None:
@@ -236,6 +243,12 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         extra = {}
         if args.group_column is not None:
             extra["groups"] = _group_labels(frame, args.group_column, args.scores)
+        if args.cell_column is not None:
+            extra["cells"] = _group_labels(frame, args.cell_column, args.scores,
+                                           flag="--cell-column")
+        if args.batch_size is not None:
+            extra.update(batch_size=args.batch_size, alarm_reference=args.alarm_reference,
+                         alarm_decision_interval=args.alarm_decision_interval)
         content = _build_and_write(
             args, stages, y_true=y, y_prob=P, costs=matrix, capacity=capacity,
             action_names=actions, unlabelled_prob=q, class_names=columns, **extra,
@@ -249,7 +262,15 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
     if content.shift_pvalue is not None:
         summary["shift_pvalue"] = float(content.shift_pvalue)
         line += f", shift p = {content.shift_pvalue:.3g}"
+    if getattr(content, "class_alarms", None):
+        # the first alarm of each class's prevalence alarm (null: none)
+        summary["first_alarms"] = {content.class_names[j]: a.first_batch
+                                   for j, a in content.class_alarms.items()}
+        fired = [f"{content.class_names[j]} after batch {a.first_batch}"
+                 for j, a in content.class_alarms.items() if a.first_batch is not None]
+        line += f", alarms: {'; '.join(fired)}" if fired else ", no prevalence alarm"
     line += group_summary(content, summary)
+    line += cell_summary(content, summary)
     _print_summary(args, line, summary)
     return 0
 
@@ -316,23 +337,25 @@ def _class_labels(frame, args: argparse.Namespace, columns: list[str]) -> np.nda
 
 
 def _text_columns(args: argparse.Namespace) -> list[str]:
-    """Columns read as the text they hold: the --group-column (``01`` and ``1`` are two groups,
-    ``NA`` is a group, as ``calibrate apply`` keeps the columns it passes through)."""
-    return [] if args.group_column is None else [args.group_column]
+    """Columns read as the text they hold: the --group-column and --cell-column (``01`` and
+    ``1`` are two groups, ``NA`` is a group, as ``calibrate apply`` keeps the columns it passes
+    through)."""
+    return [c for c in (args.group_column, getattr(args, "cell_column", None)) if c is not None]
 
 
-def _group_labels(frame, column: str, path: str) -> np.ndarray:
-    """The --group-column as text labels, exactly as written (read with :func:`_text_columns`);
-    an empty cell is refused (never silently dropped)."""
+def _group_labels(frame, column: str, path: str, flag: str = "--group-column") -> np.ndarray:
+    """The --group-column (or ``flag``) as text labels, exactly as written (read with
+    :func:`_text_columns`); an empty cell is refused (never silently dropped)."""
     if column not in frame.columns:
-        raise DataError(f"{path}: no column {shown(column)} (--group-column); the columns are "
+        raise DataError(f"{path}: no column {shown(column)} ({flag}); the columns are "
                         f"{', '.join(shown(str(c)) for c in frame.columns)}")
     raw = frame[column]
     missing = raw.isna().to_numpy()
     if missing.any():
         row = int(np.flatnonzero(missing)[0])
         raise DataError(f"{path}: column {shown(column)}, row {row + 2} (counting the header as "
-                        f"row 1) has no group; give every row a group (e.g. 'unknown')")
+                        f"row 1) has no group ({flag}); give every row a group (e.g. "
+                        "'unknown')")
     return raw.astype(str).to_numpy()
 
 
@@ -408,6 +431,20 @@ def group_summary(content: Any, summary: dict) -> str:
         summary["groups"]["action_names"] = [str(a) for a in checks.action_names]
     judged = sum(bool(c.judged) for c in checks.groups)
     return f", {len(checks.groups)} groups ({judged} judged)"
+
+
+def cell_summary(content: Any, summary: dict) -> str:
+    """With --cell-column: what the intervals resampled (``resampled``: the unit, the number of
+    cells and their Pearson dispersion, null where not computed), and its words in the line."""
+    unit = getattr(content, "resampling", None)
+    if unit is None or unit.kind != "cells":
+        return ""
+    summary["resampled"] = {"unit": "cells", "n_cells": int(unit.n_cells),
+                            "dispersion": unit.dispersion}
+    words = f"; intervals resample {unit.n_cells} cells"
+    if unit.dispersion is not None:
+        words += f" (dispersion {unit.dispersion:.3g})"
+    return words
 
 
 def _print_summary(args: argparse.Namespace, line: str, summary: dict) -> None:
@@ -494,7 +531,8 @@ def _handler(args: argparse.Namespace) -> int:
                     f"{args.unlabelled}: --batch-size {args.batch_size} is not below the file's "
                     f"{q.shape[0]} rows, so there is one batch: the prevalence alarm needs a "
                     "series of batches and cannot judge a drift from one"))
-        check_ranking("report", p[closed], y[closed], labels, args.scores)
+        check_ranking("report", p[closed], y[closed], labels, args.scores,
+                      sample_weight=None if given is None else given[closed])
         if args.scale == "log-odds":
             from probwrap.calibration import log_odds_to_proba
 
@@ -505,6 +543,9 @@ def _handler(args: argparse.Namespace) -> int:
         extra: dict = {"guarantee": guarantee}
         if args.group_column is not None:
             extra["groups"] = _group_labels(frame, args.group_column, args.scores)
+        if args.cell_column is not None:
+            extra["cells"] = _group_labels(frame, args.cell_column, args.scores,
+                                           flag="--cell-column")
         if late is not None:
             extra["horizon_labels"] = late  # (carrying the given weights)
         else:
@@ -547,6 +588,7 @@ def _handler(args: argparse.Namespace) -> int:
             line += f", applied by the rules {content.applied_prevalence:.4f}"
     line += promise_summary(content, summary)
     line += group_summary(content, summary)
+    line += cell_summary(content, summary)
     if given is not None:
         summary["weights"] = weight_summary(args.weight_column, given)
         line += f"; weighted by {shown(args.weight_column)}"

@@ -77,6 +77,7 @@ def cutoff_interval(
     n_resamples: int = 200,
     confidence_level: float = 0.95,
     random_state: Any = None,
+    groups: Any = None,
 ) -> CutoffInterval:
     """How precisely the held-out rows determine the cutoff: bootstrap and fold spread.
 
@@ -106,6 +107,14 @@ def cutoff_interval(
         Coverage of the percentile interval.
     random_state : int, RandomState instance or None, default=None
         Seed of the resampling.
+    groups : array-like of shape (n,), default=None
+        Group of each row: whole groups are resampled (a cluster bootstrap), every row of a
+        drawn group with it, as in :func:`probwrap.metrics.bootstrap_interval`. Pass the group
+        index of counts expanded to a success and a failure row per group
+        (:func:`probwrap.aggregated.expand_counts`): resampling those rows one by one breaks
+        each group into its successes alone or its failures alone. Resample ``b`` then draws
+        ``random_state.randint(0, n_groups, size=n_groups)`` over the groups (in sorted order)
+        that hold a row of positive weight.
 
     Returns
     -------
@@ -138,6 +147,20 @@ def cutoff_interval(
     # of positive weight only (a resample of zero-weight rows alone would have no cost curve).
     present = np.flatnonzero(w1 > 0)
     n = present.shape[0]
+    unit_of_row = None  # None: every row is its own resampling unit
+    if groups is not None:
+        g = np.asarray(groups)
+        if g.ndim != 1 or g.shape[0] != s.shape[0]:
+            raise ValueError(f"`groups` must be 1-d with one group per row ({s.shape[0]}); got "
+                             f"shape {g.shape}.")
+        if g.dtype.kind == "f" and np.any(np.isnan(g)):
+            raise ValueError("`groups` contains NaN; give every row a group.")
+        try:
+            _, unit_of_row = np.unique(g[present], return_inverse=True)
+        except TypeError as exc:
+            raise ValueError(f"`groups` must hold sortable labels of one kind ({exc}).") from exc
+        unit_of_row = unit_of_row.ravel()
+    n_units = n if unit_of_row is None else int(unit_of_row.max()) + 1
     rows = _SortedRows(s[present], bounds)
     rc = _RowCosts(matrix if matrix.ndim == 2 else matrix[present], yi[present],
                    None if w is None else w[present])
@@ -148,7 +171,10 @@ def cutoff_interval(
     found = np.empty(int(n_resamples))
     for b in range(int(n_resamples)):
         # a row drawn c times gets c times its weight; counts are put in score order directly
-        counts = np.bincount(rng.randint(0, n, size=n), minlength=n).astype(float)
+        counts = np.bincount(rng.randint(0, n_units, size=n_units),
+                             minlength=n_units).astype(float)
+        if unit_of_row is not None:
+            counts = counts[unit_of_row]  # every row as often as its group was drawn
         cs = counts[rows.order]
         total, flagged, weight = rows.curve(
             d_sorted * cs, float(np.dot(c1w_sorted, cs)), w_sorted * cs

@@ -74,6 +74,7 @@ def write_report(
     horizon: float | None = None,
     alarm_reference: float | None = None,
     alarm_decision_interval: float | None = None,
+    cells: Any = None,
 ) -> ReportContent | MulticlassReportContent:
     """Write a self-contained HTML report and return the numbers it shows.
 
@@ -138,6 +139,9 @@ def write_report(
         a prevalence alarm: a two-sided CUSUM of the batches' shift tests against the source
         prevalence (:func:`probwrap.shift.signed_shift_scores`,
         :func:`probwrap.shift.cusum_alarms`, k = 0.5, h = 5; see docs/prevalence_alarms.md).
+        In the general form: the class shares per batch and one such alarm per class, on its
+        signed shift score (``class_shift_score``; with two classes only the second class's);
+        in ``content.batch_table`` and ``content.class_alarms``.
     alarm_reference, alarm_decision_interval : float, optional
         The alarm's reference value k and decision interval h, in standard deviations of the
         standardised batch shifts (defaults 0.5 and 5: about one false alarm in 465 in-control
@@ -197,6 +201,19 @@ def write_report(
     horizon_labels : HorizonLabels, optional
         The same, already computed with :func:`~probwrap.late_labels.labels_at_horizon`
         (then ``sample_weight`` is not given again).
+    cells : array-like of shape (n,), None or False, default=None
+        What every bootstrap interval resamples. Outcomes that arrive as ``k`` of ``n``
+        (:func:`probwrap.aggregated.expand_counts`, or a weighted frequency table) are rows
+        that belong together: give the group of every labelled row here and whole groups are
+        resampled (resampling the rows one by one breaks a group into its successes alone or
+        its failures alone; on statsmodels' star98 that made the standard errors about twice
+        the group-robust ones, docs/aggregated_outcomes.md). None: with ``model`` and ``X``,
+        weighted rows with identical features and different labels are one cell each (the
+        rule the wrappers' folds use), otherwise rows; with ``y_true``/``y_prob``, weighted rows
+        with identical forecasts and different labels only earn a note asking for ``cells``.
+        False: always rows. The page says which unit was resampled and, for binary outcomes
+        with whole-number weights, the cells' Pearson dispersion (a note when it is well above
+        1). In ``content.resampling``.
 
     Returns
     -------
@@ -238,7 +255,7 @@ def write_report(
         row_costs=row_costs, class_names=class_names, progress=progress, groups=groups,
         guarantee=guarantee, horizon_labels=horizon_labels, time=time, event=event,
         horizon=horizon, alarm_reference=alarm_reference,
-        alarm_decision_interval=alarm_decision_interval,
+        alarm_decision_interval=alarm_decision_interval, cells=cells,
     )
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)

@@ -254,7 +254,7 @@ def class_index(y: Any, classes: np.ndarray, name: str) -> np.ndarray:
 
 def metric_row(notes: NoteLog, key: str, label: str, fn: Any, y: np.ndarray, p: np.ndarray,
                w: np.ndarray | None, ideal: str, n_resamples: int, level: float, seed: int,
-               **kw: Any) -> MetricRow:
+               groups: np.ndarray | None = None, **kw: Any) -> MetricRow:
     """One metric with its bootstrap interval; warnings and expected failures become notes.
 
     The binned calibration error (``key`` starting with ``"ece"``) is biased upwards: resampled
@@ -262,9 +262,11 @@ def metric_row(notes: NoteLog, key: str, label: str, fn: Any, y: np.ndarray, p: 
     bias-corrected, ``2 s - median(s*)``, with the basic bootstrap interval ``(2 s - q_high,
     2 s - q_low)`` (Davison & Hinkley 1997, section 5.2.1), which contains that estimate by
     construction; both are floored at 0 (the error cannot be negative), and the plain value is
-    kept in ``plain_value``.
+    kept in ``plain_value``. ``groups``: the cell of every row, resampled whole (None: rows).
     """
     binned = key.startswith("ece")
+    if groups is not None:
+        kw = {**kw, "groups": groups}
     res = notes.compute(
         f"metric:{key}", label, bootstrap_interval, fn, y, p, sample_weight=w,
         n_resamples=n_resamples, confidence_level=level, random_state=seed,

@@ -46,6 +46,7 @@ from ._binary_rules import (
     rule_row,
     target_columns,
 )
+from ._cells import resampling_unit
 from ._common import (
     MetricRow,
     NoteLog,
@@ -125,6 +126,9 @@ class ReportContent:
     alarm: Any = None
     guarantee: Any = None
     late_labels: Any = None
+    #: what every bootstrap interval resampled: rows, or whole cells of aggregated counts
+    #: (:class:`~probwrap.report._cells.ResamplingUnit`, with the cells' dispersion)
+    resampling: Any = None
 
 
 def _inner_chain(model: Any) -> list[Any]:
@@ -143,7 +147,8 @@ def _find(chain: list[Any], cls_name: str) -> Any:
     return None
 
 
-def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes) -> list[MetricRow]:
+def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes,
+                 groups=None) -> list[MetricRow]:
     def slope(yt, yp, sample_weight=None):
         fit = slope_intercept_fit(yt, yp, sample_weight=sample_weight)
         if fit.notes:  # forecasts that do not vary or separate the classes: no slope
@@ -164,8 +169,9 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes) -> list[Metric
     seed = int(rng.randint(2**31 - 1))
     if p.shape[0] >= FAST_BOOTSTRAP_ROWS:
         return fast_metric_rows(y, p, w, n_bins, n_resamples, level, seed, notes,
-                                {key: label for key, label, *_ in specs})
-    return [metric_row(notes, key, label, fn, y, p, w, ideal, n_resamples, level, seed, **kw)
+                                {key: label for key, label, *_ in specs}, groups=groups)
+    return [metric_row(notes, key, label, fn, y, p, w, ideal, n_resamples, level, seed,
+                       groups=groups, **kw)
             for key, label, fn, kw, ideal in specs]
 
 
@@ -213,6 +219,7 @@ def collect_content(
     horizon: Any = None,
     alarm_reference: float | None = None,
     alarm_decision_interval: float | None = None,
+    cells: Any = None,
 ) -> Any:
     """Compute the report's numbers; see :func:`probwrap.report.write_report`.
 
@@ -244,13 +251,23 @@ def collect_content(
             y = late.y
         else:
             y_true = late.y
+    for name, value, low in (("alarm_reference", alarm_reference, 0.0),
+                             ("alarm_decision_interval", alarm_decision_interval, None)):
+        if value is not None and not (isinstance(value, (int, float)) and np.isfinite(value)
+                                      and (value > 0 if low is None else value >= low)):
+            raise ValueError(f"`{name}` must be a finite number "
+                             f"{'> 0' if low is None else '>= 0'}; got {plain(value)!r}.")
+    alarm_settings = {k: v for k, v in (("reference", alarm_reference),
+                                        ("decision_interval", alarm_decision_interval))
+                      if v is not None}
     general = general_report(
         y_true=y_true, y_prob=y_prob, model=model, X=X, y=y, sample_weight=sample_weight,
         costs=costs, row_costs=row_costs, capacity=capacity, action_names=action_names,
         unlabelled_prob=unlabelled_prob, X_unlabelled=X_unlabelled, prior_shift=prior_shift,
         batch_size=batch_size, n_bins=n_bins, n_resamples=n_resamples,
         confidence_level=confidence_level, rng=rng, title=title, policy=policy, calib=calib,
-        class_names=class_names, progress=progress, groups=groups,
+        class_names=class_names, progress=progress, groups=groups, cells=cells,
+        alarm_settings=alarm_settings,
     )
     if general is not None:
         if guarantee is not None:
@@ -290,14 +307,10 @@ def collect_content(
         if progress is not None:
             progress(name, done, total)
 
-    for name, value, low in (("alarm_reference", alarm_reference, 0.0),
-                             ("alarm_decision_interval", alarm_decision_interval, None)):
-        if value is not None and not (isinstance(value, (int, float)) and np.isfinite(value)
-                                      and (value > 0 if low is None else value >= low)):
-            raise ValueError(f"`{name}` must be a finite number "
-                             f"{'> 0' if low is None else '>= 0'}; got {plain(value)!r}.")
     notes = NoteLog()
     step("calibration metrics", 0)
+    unit = resampling_unit(cells, n=int(p.shape[0]), y_index=y01.astype(np.intp), w=w,
+                           X=X if model is not None else None, y01=y01, p=p, notes=notes)
     content = ReportContent(
         title=title,
         n_rows=int(p.shape[0]),
@@ -305,11 +318,13 @@ def collect_content(
         y_true=y01,
         y_prob=p,
         sample_weight=w,
-        metrics=_metric_rows(y01, p, w, n_bins, n_resamples, confidence_level, rng, notes),
+        metrics=_metric_rows(y01, p, w, n_bins, n_resamples, confidence_level, rng, notes,
+                             groups=unit.groups),
         n_bins=n_bins,
         confidence_level=confidence_level,
         class_names=class_pair,
         late_labels=late,
+        resampling=unit,
     )
     if calib is not None:
         content.calibration_method = str(getattr(calib, "method_", None))
@@ -375,6 +390,7 @@ def collect_content(
                 "cutoff", "cutoff interval", cutoff_interval, p, y01.astype(np.intp), matrix,
                 sample_weight=w, capacity=cap, score_bounds=(0.0, 1.0),
                 n_resamples=n_resamples, confidence_level=confidence_level, random_state=seed,
+                groups=unit.groups,
             )
             content.cost_curve = res
             content.cost_interval = ci
@@ -457,14 +473,11 @@ def collect_content(
             prior_shift is not None and hasattr(prior_shift, "prior_estimator_")) else est
         labelled_rows = getattr(fitted, "n_source_effective_", None) or np.inf
 
-        settings = {k: v for k, v in (("reference", alarm_reference),
-                                      ("decision_interval", alarm_decision_interval))
-                    if v is not None}
         content.alarm = notes.compute(
             "batches", "prevalence alarm", batch_alarm, content.batch_table,
             content.source_prevalence, confidence_level=confidence_level,
             labelled_rows=float(labelled_rows), estimator=fitted, expected=(ValueError,),
-            **settings)
+            **alarm_settings)
     E = None
     if content.applied_prevalence is not None and content.chosen_cutoff is not None:
         # moved as the wrapper moves its predictions: to the prevalence its evidence gate

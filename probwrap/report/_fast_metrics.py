@@ -43,8 +43,11 @@ _SLOPE_CLIP = 1e-12
 
 def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins: int,
                      n_resamples: int, level: float, seed: int, notes: NoteLog,
-                     labels: dict[str, str]) -> list[MetricRow]:
-    """The five binary metric rows (see the module docstring); ``labels`` key -> label."""
+                     labels: dict[str, str], groups: np.ndarray | None = None
+                     ) -> list[MetricRow]:
+    """The five binary metric rows (see the module docstring); ``labels`` key -> label;
+    ``groups``: the cell (``0 .. n_cells - 1``) of every row, resampled whole as
+    ``bootstrap_interval(groups=)`` does (None: rows)."""
     from ..metrics._scores import LOG_LOSS_CLIP
 
     n = p.shape[0]
@@ -82,8 +85,11 @@ def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins:
     py, pp = bw * yf, bw * p
     rng = check_random_state(seed)
     dist = np.empty((n_resamples, 5))
+    n_units = n if groups is None else int(groups.max()) + 1
     for k in range(n_resamples):
-        c = np.bincount(rng.randint(0, n, size=n), minlength=n).astype(float)
+        c = np.bincount(rng.randint(0, n_units, size=n_units), minlength=n_units).astype(float)
+        if groups is not None:
+            c = c[groups]  # every row as often as its cell was drawn
         s = c @ V
         total = s[2]
         gap = np.abs(np.bincount(idx, weights=c * py, minlength=n_bins)

@@ -24,7 +24,8 @@ from ..metrics import (
     log_loss,
 )
 from ..plot._common import class_proba
-from ..shift import PriorEstimator
+from ..shift import PriorEstimator, prior_by_batch
+from ._cells import resampling_unit
 from ._common import (
     MetricRow,
     NoteLog,
@@ -93,6 +94,13 @@ class MulticlassReportContent:
     late_labels: Any = None
     group_checks: Any = None
     recommendation: Recommendation | None = None
+    #: what every bootstrap interval resampled (see ``ReportContent.resampling``)
+    resampling: Any = None
+    #: class shares batch by batch (:func:`probwrap.shift.prior_by_batch` or
+    #: ``PriorShiftWrapper.monitor``), and one prevalence alarm per class
+    #: (:class:`~probwrap.report._alarm_chart.BatchAlarm`; two classes: the second only)
+    batch_table: np.ndarray | None = None
+    class_alarms: dict[int, Any] = field(default_factory=dict)
 
     # the binary report's names, so that shared code (glance, demo summary) can read either
     @property
@@ -116,7 +124,28 @@ def _maximum_likelihood(content: Any, res: Any, strength: Any) -> None:
     content.prior_strength = None if strength is None else float(strength)
 
 
-def _metric_rows(y, p, w, n_bins, n_resamples, level, seed, notes) -> list[MetricRow]:
+def _class_alarms(content: MulticlassReportContent, fitted: Any, notes: NoteLog,
+                  settings: dict[str, float]) -> None:
+    """One prevalence alarm per class on the batch table (two classes: the second class's,
+    as in the binary report): the CUSUM of each class's signed shift score
+    (:func:`probwrap.shift.signed_shift_scores`; ``class_shift_score`` beyond two classes)."""
+    from ._alarm_chart import batch_alarm
+
+    table = content.batch_table
+    labelled_rows = getattr(fitted, "n_source_effective_", None) or np.inf
+    classes = [1] if content.n_classes == 2 else list(range(content.n_classes))
+    for j in classes:
+        alarm = notes.compute(
+            "batches", f"prevalence alarm of {content.class_names[j]}", batch_alarm, table,
+            float(content.source_prior[j]), confidence_level=content.confidence_level,
+            class_index=j, labelled_rows=float(labelled_rows), estimator=fitted,
+            expected=(ValueError,), **settings)
+        if alarm is not None:
+            content.class_alarms[j] = alarm
+
+
+def _metric_rows(y, p, w, n_bins, n_resamples, level, seed, notes,
+                 groups=None) -> list[MetricRow]:
     specs = [
         ("log_loss", "log loss (multiclass)", log_loss, {}, "0 (lower is better)"),
         ("brier", "Brier score (sum over classes)", brier_score, {}, "0 (lower is better)"),
@@ -125,7 +154,8 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, seed, notes) -> list[Metri
         ("ece_classwise", f"classwise calibration error ({n_bins} bins per class, "
          "bias-corrected)", classwise_calibration_error, {"n_bins": n_bins}, "0"),
     ]
-    return [metric_row(notes, key, label, fn, y, p, w, ideal, n_resamples, level, seed, **kw)
+    return [metric_row(notes, key, label, fn, y, p, w, ideal, n_resamples, level, seed,
+                       groups=groups, **kw)
             for key, label, fn, kw, ideal in specs]
 
 
@@ -152,6 +182,10 @@ def collect_general_content(
     title: str,
     progress: Any = None,
     groups: Any = None,
+    cells: Any = None,
+    from_model: bool = False,
+    batch_size: int | None = None,
+    alarm_settings: dict[str, float] | None = None,
 ) -> MulticlassReportContent:
     """The numbers of a multiclass and/or multi-action report (see ``write_report``)."""
     n, k = proba.shape
@@ -167,13 +201,17 @@ def collect_general_content(
 
     notes = NoteLog()
     step("calibration metrics", 0)
+    binary = k == 2
+    unit = resampling_unit(cells, n=n, y_index=y_index, w=w, X=X if from_model else None,
+                           y01=y_index if binary else None,
+                           p=proba[:, 1] if binary else None, notes=notes)
     seed = int(rng.randint(2**31 - 1))
     content = MulticlassReportContent(
         title=title, n_rows=n, n_classes=k, class_names=class_names,
         class_shares=counts / counts.sum(), y_true=y_index, y_prob=proba, sample_weight=w,
         metrics=_metric_rows(y_index, proba, w, n_bins, n_resamples, confidence_level, seed,
-                             notes),
-        n_bins=n_bins, confidence_level=confidence_level,
+                             notes, groups=unit.groups),
+        n_bins=n_bins, confidence_level=confidence_level, resampling=unit,
     )
     if calib is not None:
         content.calibration_method = str(getattr(calib, "method_", None))
@@ -235,6 +273,7 @@ def collect_general_content(
     # -- priors ------------------------------------------------------------------------------
     step("class shares", 2)
     q = unlabelled_proba
+    fitted = None
     if q is not None:
         content.n_unlabelled = int(q.shape[0])
     if prior_shift is not None and hasattr(prior_shift, "target_prior_"):
@@ -249,6 +288,12 @@ def collect_general_content(
                             getattr(prior_shift, "prior_strength", None))
         content.applied_prior = np.asarray(prior_shift.applied_prior_, dtype=float)
         content.adaptation_weight = float(prior_shift.adaptation_weight_)
+        if X_unlabelled is not None and batch_size is not None:
+            step("class shares by batch", 3)
+            content.batch_table = notes.compute(
+                "batches", "class shares by batch", prior_shift.monitor, X_unlabelled,
+                batch_size=batch_size)
+            fitted = getattr(prior_shift, "prior_estimator_", None)
     elif q is not None:
         est = PriorEstimator(n_resamples=n_resamples, confidence_level=confidence_level,
                              random_state=int(rng.randint(2**31 - 1)))
@@ -261,6 +306,14 @@ def collect_general_content(
         content.shift_pvalue = float(res.shift_pvalue)
         _maximum_likelihood(content, res, est.prior_strength)
         content.adaptation_weight, content.applied_prior = gated_prior(res, est.source_prior_)
+        if batch_size is not None:
+            step("class shares by batch", 3)
+            content.batch_table = notes.compute(
+                "batches", "class shares by batch", prior_by_batch, est, q,
+                batch_size=batch_size)
+            fitted = est
+    if content.batch_table is not None and content.source_prior is not None:
+        _class_alarms(content, fitted, notes, alarm_settings or {})
     if (content.applied_prior is not None and q is not None and matrix is not None
             and np.all(content.source_prior > 0) and np.all(content.applied_prior > 0)):
         general_target_columns(content, proba, y_index, w, rule_costs, q, rule_fns,
@@ -304,7 +357,8 @@ def _needs_general(k: int, costs: Any, row_costs: Any, policy: Any) -> bool:
 def general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_costs, capacity,
                     action_names, unlabelled_prob, X_unlabelled, prior_shift, batch_size,
                     n_bins, n_resamples, confidence_level, rng, title, policy, calib,
-                    class_names, progress, groups=None) -> Any:
+                    class_names, progress, groups=None, cells=None,
+                    alarm_settings=None) -> Any:
     """The multiclass / multi-action content, or None when the binary report applies."""
 
     if model is not None:
@@ -352,9 +406,6 @@ def general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_cos
                 f"give labels as column indices 0..{k - 1}, or every class at least once."
             )
         y_index = class_index(y_arr, classes, "y_true")
-    if batch_size is not None:
-        raise ValueError("`batch_size` (prevalence by batch) is available for binary reports "
-                         "with two actions only.")
     q = None if unlabelled_prob is None else as_proba_2d(unlabelled_prob, "unlabelled_prob")
     if q is not None and q.shape[1] != proba.shape[1]:
         raise ValueError(f"`unlabelled_prob` has {q.shape[1]} columns but the labelled "
@@ -369,5 +420,6 @@ def general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_cos
         policy=policy, calib=calib, X=X, unlabelled_proba=q, X_unlabelled=X_unlabelled,
         prior_shift=prior_shift, n_bins=n_bins, n_resamples=n_resamples,
         confidence_level=confidence_level, rng=rng, title=title, progress=progress,
-        groups=groups,
+        groups=groups, cells=cells, from_model=model is not None, batch_size=batch_size,
+        alarm_settings=alarm_settings,
     )

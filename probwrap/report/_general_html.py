@@ -6,6 +6,7 @@ from typing import Any
 
 import numpy as np
 
+from ._cells import unit_words
 from ._common import draw_figure, figure_notes
 from ._general import MulticlassReportContent
 from ._html_parts import (
@@ -62,6 +63,11 @@ def general_figures(c: MulticlassReportContent) -> dict[str, str]:
         draw_figure(c, figs, "actions", actions)
     if c.target_prior is not None:
         draw_figure(c, figs, "class_prior", class_prior)
+    from ._alarm_chart import alarm_svg
+
+    for j, alarm in getattr(c, "class_alarms", {}).items():
+        if alarm.first_batch is not None:  # a chart only for the classes whose share moved
+            draw_figure(c, figs, f"alarm:{j}", alarm_svg, alarm, key=f"alarm{j}")
     return figs
 
 
@@ -75,7 +81,7 @@ def _calibration(c: MulticlassReportContent, figures: dict[str, str]) -> str:
     parts = [
         '<section id="calibration"><h2><span class="pw-num">1</span>Calibration</h2>',
         f"<p>Measured on {c.n_rows} labelled rows of {c.n_classes} classes. Intervals are "
-        f"{level} bootstrap percentile intervals (rows resampled with replacement).</p>",
+        f"{level} bootstrap percentile intervals ({_text(unit_words(c.resampling))}).</p>",
         '<table id="class-shares"><thead><tr><th>class</th><th>share of labelled rows</th>'
         f"</tr></thead><tbody>{shares}</tbody></table>",
         '<table id="calibration-metrics"><thead><tr><th>metric</th><th>value</th>'
@@ -85,7 +91,8 @@ def _calibration(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         "compares it with how often that class occurred (Guo et al. 2017); the classwise error "
         "averages the one-vs-rest binned error of every class (Kull et al. 2019).</p>",
         ece_note(c),
-        notes_box([n for n in c.notes if n.key.startswith("metric:")], "notes-calibration"),
+        notes_box([n for n in c.notes if n.key.startswith(("metric:", "cells"))],
+                  "notes-calibration"),
         late_label_html(c),
     ]
     if c.calibration_method is not None:
@@ -275,7 +282,8 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         )
     if applied is not None:
         parts.append(gate_sentence(weight, "class shares"))
-    parts.append(notes_box([n for n in c.notes if n.key == "prevalence"], "notes-prevalence"))
+    parts.append(notes_box([n for n in c.notes if n.key in ("prevalence", "batches")],
+                           "notes-prevalence"))
     if "class_prior" in figures:  # drawn with matplotlib only (the plot extra)
         parts.append(_figure(
             "fig-class-prior", figures["class_prior"],
@@ -283,7 +291,90 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
             f"{level} intervals.",
             figure_notes(c, "class_prior"),
         ))
+    parts.append(_batches(c, figures))
     parts.append("</section>")
+    return "".join(parts)
+
+
+def _alarm_warnings(c: MulticlassReportContent) -> dict[str, list[int]]:
+    """Each distinct warning of the class alarms once, with the classes it came up for (the
+    labelled rows' shared error is the same for every class)."""
+    out: dict[str, list[int]] = {}
+    for j, a in c.class_alarms.items():
+        for w in a.warnings:
+            out.setdefault(w, []).append(j)
+    return out
+
+
+def _batches(c: MulticlassReportContent, figures: dict[str, str]) -> str:
+    """Class shares batch by batch and one prevalence alarm per class (or nothing)."""
+    table = c.batch_table
+    if table is None:
+        return ""
+    level = f"{c.confidence_level:.0%}"
+    head = "".join(f"<th>{_text(name)}</th>" for name in c.class_names)
+    body = "".join(
+        f'<tr data-item="batch:{_text(str(table["batch"][i]))}"><td>'
+        f'{_text(str(table["batch"][i]))}</td><td>{int(table["n_rows"][i])}</td>'
+        + "".join(
+            f'<td data-value="{float(table["prior"][i, j])!r}">{table["prior"][i, j]:.4f} '
+            f'[{table["lower"][i, j]:.4f}, {table["upper"][i, j]:.4f}]</td>'
+            for j in range(c.n_classes))
+        + f'<td data-value="{float(table["shift_pvalue"][i])!r}">'
+        f'{table["shift_pvalue"][i]:.3g}</td></tr>'
+        for i in range(table.shape[0]))
+    parts = [
+        '<h3 id="class-batches-title">Class shares by batch</h3>',
+        f"<p>Each batch's estimated class shares with {level} intervals, and the p-value of its "
+        "test of no shift against the source shares.</p>",
+        f'<table id="class-batches"><thead><tr><th>batch</th><th>rows</th>{head}'
+        f"<th>shift test p-value</th></tr></thead><tbody>{body}</tbody></table>",
+    ]
+    if c.class_alarms:
+        rows = []
+        for j, a in c.class_alarms.items():
+            res = a.result
+            if a.first_batch is None:
+                verdict = "no alarm"
+            else:
+                way = "rose" if res.direction[0] > 0 else "fell"
+                verdict = (f"alarm after batch {_text(a.first_batch)} (the share {way}; "
+                           f"{res.alarms.size} in all)")
+            rows.append(
+                f'<tr data-item="alarm:{j}" data-first-alarm="{_text(a.first_batch or "")}" '
+                f'data-n-alarms="{res.alarms.size}"><td>{_text(c.class_names[j])}</td>'
+                f"<td>{verdict}</td>"
+                f'<td data-value="{a.in_control_run_length!r}">'
+                f"{a.in_control_run_length:.0f}</td></tr>")
+        n_charts = len(c.class_alarms)
+        first = next(iter(c.class_alarms.values())).result
+        several = (
+            f" With one chart per class ({n_charts} charts), a false alarm on any of them comes "
+            f"up to {n_charts} times as often as the run length of one chart (a union bound)."
+            if n_charts > 1 else "")
+        parts.append(
+            '<table id="class-alarms"><thead><tr><th>class</th><th>prevalence alarm</th>'
+            f"<th>in-control run length (batches, probability "
+            f"{next(iter(c.class_alarms.values())).run_length_probability:g})</th></tr></thead>"
+            f"<tbody>{''.join(rows)}</tbody></table>"
+            "<p>Prevalence alarm per class: a two-sided CUSUM (Page 1954; k = "
+            f"{first.reference:g}, h = {first.decision_interval:g}) of each batch's signed "
+            "shift score for that class, a standard normal when nothing moved; the run length "
+            "is the one reached with that probability over the labelled rows every batch is "
+            f"compared with.{several} "
+            + "".join(f"Note ({', '.join(_text(c.class_names[j]) for j in where)}): "
+                      f"{_text(w)} " for w, where in _alarm_warnings(c).items())
+            + "An alarm says the estimates drifted, not why; check a labelled sample before "
+            "acting.</p>")
+        for j in c.class_alarms:
+            key = f"alarm:{j}"
+            if key in figures:
+                parts.append(_figure(
+                    f"fig-alarm-{j}", figures[key],
+                    f"Two-sided CUSUM of the batch shift scores of {_text(c.class_names[j])} "
+                    "against its source share; an alarm fires when a sum crosses the dashed "
+                    "decision interval and both sums restart.",
+                    figure_notes(c, key)))
     return "".join(parts)
 
 

@@ -12,6 +12,7 @@ from ..plot import (
     ReliabilityDiagram,
 )
 from ._alarm_chart import alarm_svg
+from ._cells import unit_words
 from ._common import draw_figure, figure_notes
 from ._content import BAYES_NAME, HALF_NAME, ReportContent
 from ._general_groups import multiclass_group_section
@@ -72,12 +73,13 @@ def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
         '<section id="calibration"><h2><span class="pw-num">1</span>Calibration</h2>',
         f"<p>Measured on {c.n_rows} labelled rows with an observed prevalence of "
         f"{c.prevalence:.4f} (share of {_positive(c)}). Intervals are {level} bootstrap percentile intervals "
-        "(rows resampled with replacement).</p>",
+        f"({_text(unit_words(c.resampling))}).</p>",
         '<table id="calibration-metrics"><thead><tr><th>metric</th><th>value</th>'
         f"<th>{level} low</th><th>{level} high</th><th>ideal</th></tr></thead>"
         f"<tbody>{rows}</tbody></table>",
         ece_note(c),
-        notes_box([n for n in c.notes if n.key.startswith("metric:")], "notes-calibration"),
+        notes_box([n for n in c.notes if n.key.startswith(("metric:", "cells"))],
+                  "notes-calibration"),
         late_label_html(c),
     ]
     if c.calibration_method is not None:
