@@ -267,3 +267,33 @@ def test_cli_cell_column(star98, tmp_path):
          "score", "--label-column", "label", "--cell-column", "route", "--out",
          str(tmp_path / "r2.html")], capture_output=True, text=True)
     assert bad.returncode != 0 and "no column 'route' (--cell-column)" in bad.stderr
+
+
+@pytest.mark.parametrize("verb", [["cutoff", "--cost-fp", "1", "--cost-fn", "3"],
+                                  ["calibrate", "fit"]])
+def test_cli_ranking_check_reads_the_weights(star98, tmp_path, verb):
+    # Expanded counts put every score once with each label, so their unweighted ROC AUC is 0.5
+    # (a hair below by rounding) and `cutoff` / `calibrate fit` said the scores ranked the
+    # classes BELOW one another; weighted (scikit-learn's roc_auc_score with sample_weight)
+    # the fitted star98 model ranks them well.
+    from sklearn.metrics import roc_auc_score
+
+    s = star98
+    assert roc_auc_score(s["y"], s["p_rows"], sample_weight=s["w"]) > 0.6
+    path = tmp_path / "districts.csv"
+    pd.DataFrame({"score": s["p_rows"], "label": s["y"], "w": s["w"]}).to_csv(path, index=False)
+    extra = ["--out", str(tmp_path / "map.json")] if verb[0] == "calibrate" else []
+    out = subprocess.run(
+        [sys.executable, "-m", "probwrap", *verb, "--scores", str(path), "--score-column",
+         "score", "--label-column", "label", "--weight-column", "w", *extra],
+        capture_output=True, text=True)
+    assert out.returncode == 0, out.stderr
+    assert "BELOW" not in out.stderr
+    flipped = tmp_path / "flipped.csv"
+    pd.DataFrame({"score": 1 - s["p_rows"], "label": s["y"], "w": s["w"]}).to_csv(
+        flipped, index=False)
+    out = subprocess.run(
+        [sys.executable, "-m", "probwrap", *verb, "--scores", str(flipped), "--score-column",
+         "score", "--label-column", "label", "--weight-column", "w", *extra],
+        capture_output=True, text=True)
+    assert "BELOW" in out.stderr

@@ -138,7 +138,8 @@ def _fit(args: argparse.Namespace) -> int:
         if given is not None:  # rows of weight 0 are not counted
             closed = closed & (given > 0)
         check_row_count("calibrate", scores.shape[0], args.scores)
-        check_ranking("calibrate", scores[closed], y[closed], labels, args.scores)
+        check_ranking("calibrate", scores[closed], y[closed], labels, args.scores,
+                      sample_weight=None if weights is None else weights[closed])
         counts = np.bincount(y[closed], minlength=2)
         if args.method == "auto" and counts.min() < 2:
             raise DataError(

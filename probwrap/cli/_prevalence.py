@@ -309,7 +309,8 @@ def _run(args: argparse.Namespace) -> int:
             check_row_count("prevalence", ref_scores.shape[0], args.reference, "reference rows")
             judged = np.ones(ref_y.shape[0], bool) if ref_weights is None else ref_weights > 0
             check_ranking("prevalence", ref_scores[judged], ref_y[judged], labels,
-                          args.reference)
+                          args.reference,
+                          sample_weight=None if ref_weights is None else ref_weights[judged])
         stages.start(names[1])
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
