@@ -269,6 +269,13 @@ def check_labels(y: Any, *, name: str = "y", classes: Any = None, min_classes: i
     (otherwise the unknown labels are named in the error). When it is not, the sorted distinct
     labels become the classes and there must be at least ``min_classes`` of them.
     """
+    return _label_codes(y, name, classes, min_classes, np.intp)
+
+
+def _label_codes(
+    y: Any, name: str, classes: Any, min_classes: int, dtype: Any
+) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`check_labels` with the indices returned as ``dtype`` (written once)."""
     arr = np.asarray(y)
     if arr.ndim == 2 and arr.shape[1] == 1:
         arr = arr[:, 0]
@@ -284,21 +291,22 @@ def check_labels(y: Any, *, name: str = "y", classes: Any = None, min_classes: i
             # Fast path without a sort for numeric labels with at most two distinct values.
             lo, hi = arr.min(), arr.max()
             is_hi = arr == hi
-            if np.all(is_hi | (arr == lo)):
+            # integers between lo and lo + 1 are lo or hi: no pass needed to check that
+            if (arr.dtype.kind in "biu" and int(hi) - int(lo) <= 1) or np.all(is_hi | (arr == lo)):
                 classes_arr = np.asarray([lo] if lo == hi else [lo, hi], dtype=arr.dtype)
                 if classes_arr.shape[0] < min_classes:
                     raise ValueError(
                         f"`{name}` contains only 1 class ({classes_arr.tolist()}); at least "
                         f"{min_classes} classes are needed."
                     )
-                return is_hi.astype(np.intp), classes_arr
+                return is_hi.astype(dtype), classes_arr
         classes_arr = np.unique(arr)
         if classes_arr.shape[0] < min_classes:
             raise ValueError(
                 f"`{name}` contains only {classes_arr.shape[0]} class "
                 f"({classes_arr.tolist()}); at least {min_classes} classes are needed."
             )
-        return np.searchsorted(classes_arr, arr), classes_arr
+        return np.searchsorted(classes_arr, arr).astype(dtype, copy=False), classes_arr
     classes_arr = np.asarray(classes)
     order = np.argsort(classes_arr, kind="stable")
     sorted_classes = classes_arr[order]
@@ -311,7 +319,7 @@ def check_labels(y: Any, *, name: str = "y", classes: Any = None, min_classes: i
             f"`{name}` contains labels {unknown} that are not among the known classes "
             f"{classes_arr.tolist()}."
         )
-    return order[pos_clipped], classes_arr
+    return order[pos_clipped].astype(dtype, copy=False), classes_arr
 
 
 def check_binary_labels(y: Any, *, name: str = "y", classes: Any = None) -> tuple[np.ndarray, np.ndarray]:
@@ -319,7 +327,7 @@ def check_binary_labels(y: Any, *, name: str = "y", classes: Any = None) -> tupl
 
     Returns ``(y01, classes)``. Raises when there are more or fewer than two distinct labels.
     """
-    idx, classes_arr = check_labels(y, name=name, classes=classes, min_classes=2)
+    idx, classes_arr = _label_codes(y, name, classes, 2, float)
     if classes is None and classes_arr.shape[0] > 2:
         raise ValueError(
             f"`{name}` has {classes_arr.shape[0]} distinct labels {classes_arr[:5].tolist()}; a "
@@ -327,7 +335,7 @@ def check_binary_labels(y: Any, *, name: str = "y", classes: Any = None) -> tupl
         )
     if classes_arr.shape[0] != 2:
         raise ValueError(f"`{name}` must have exactly two classes; got {classes_arr.tolist()}.")
-    return idx.astype(float), classes_arr
+    return idx, classes_arr
 
 
 def check_sample_weight(sample_weight: Any, n: int, *, name: str = "sample_weight") -> np.ndarray:

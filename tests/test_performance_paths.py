@@ -13,10 +13,20 @@ from probwrap.calibration._isotonic import _interpolate, _pool_ties
 
 
 def _every_distinct_score_map(s, y, w):
-    """The previous representation: one breakpoint per distinct training score."""
+    """The previous representation: one breakpoint per distinct training score.
+
+    With unit weights the map's levels are counts: each level's value is its number of
+    positives over its number of rows, one exact division (SciPy's running means can be an ulp
+    off that), so the reference takes the same mean of each of SciPy's blocks.
+    """
     distinct, weight, label_sum = _pool_ties(s, y, w)
     fit = isotonic_regression(label_sum / weight, weights=weight, increasing=True)
-    return distinct, np.clip(fit.x, 0.0, 1.0)
+    values = fit.x
+    if np.all(w == 1.0):
+        r = fit.blocks
+        means = np.add.reduceat(label_sum, r[:-1]) / np.add.reduceat(weight, r[:-1])
+        values = np.repeat(means, np.diff(r))
+    return distinct, np.clip(values, 0.0, 1.0)
 
 
 def test_isotonic_block_ends_predict_exactly_as_every_distinct_score():

@@ -248,7 +248,9 @@ class CalibrationMap(BaseEstimator):
             raise ValueError("`y` contains NaN; labels must be known for every row.")
         check_same_length(("scores", s), ("y", y))
         w = check_sample_weight(sample_weight, s.shape[0])
-        if self._uses_counts():
+        # (no weights: ones, which are row counts and give every class present a positive
+        # total, so the two weight passes below would change nothing)
+        if sample_weight is not None and self._uses_counts():
             w, rescaled = count_weights(w)
             if rescaled:
                 warnings.warn(
@@ -265,7 +267,10 @@ class CalibrationMap(BaseEstimator):
             # class totals (the weights are non-negative, so a total is 0 only when every
             # weight of the class is; a sum of positive doubles never rounds to 0)
             with np.errstate(over="ignore"):  # a total beyond the largest double is inf, > 0
-                totals = (float(w @ (1.0 - y01)), float(w @ y01))
+                totals = (
+                    (1.0, 1.0) if sample_weight is None
+                    else (float(w @ (1.0 - y01)), float(w @ y01))
+                )
             for k in (0, 1):
                 if not totals[k] > 0:
                     raise ValueError(
