@@ -18,7 +18,8 @@ Two parts, both on data sets nobody on the project wrote:
    neighbouring draws (next seeds) with, per method, the number of test rows given a
    probability below 1e-6 for their observed class.
 2. **Large sets** (10^4 to 10^6 rows): the same comparison on one split each; then the
-   isotonic fit at 10^6 rows against one ``np.argsort`` of the scores.
+   isotonic fit at 10^4 to 10^6 rows against one ``np.argsort`` of the scores, with the time
+   of each part of the fit (``--isotonic-speed`` runs only this, in seconds).
 
 Run: ``nice python benchmarks/calibration.py`` (a few minutes of CPU on two cores) or
 ``--quick`` (a handful of cells, seconds). ``--no-large`` skips part 2.
@@ -382,24 +383,98 @@ def run_large(quick: bool) -> None:
                   f"(target within ±0.5 %: {'met' if abs(change) <= 0.005 else 'NOT met'})")
 
 
-def isotonic_speed(quick: bool) -> None:
+def isotonic_speed(quick: bool, repeats: int = 7) -> None:
+    """``IsotonicMap().fit`` (no weights) against one ``np.argsort`` of the same scores.
+
+    CPU times (``time.process_time``), the fit and the argsort interleaved so that both see the
+    same load on a shared machine; the median of ``repeats`` runs (each run at least 0.1 s of
+    calls at the smaller sizes), the ratio per run shown as a range. Then, at the largest size,
+    the time of each part of the fit (the same private steps the fit calls, run one after the
+    other on the same rows): validation is the fit minus the parts.
+    """
     from probwrap.calibration import IsotonicMap, proba_to_log_odds
+    from probwrap.calibration import _isotonic as iso
+    from probwrap.calibration._base import CalibrationMap
 
-    n = 10**5 if quick else 10**6
-    rng = np.random.default_rng(0)
-    p = rng.uniform(size=n)
-    yy = (rng.uniform(size=n) < p).astype(int)
-    s = proba_to_log_odds(p)
+    def cpu(fn, calls):
+        t = time.process_time()
+        for _ in range(calls):
+            fn()
+        return (time.process_time() - t) / calls
 
-    def timed(fn, *args):
-        t = time.perf_counter()
-        fn(*args)
-        return time.perf_counter() - t
+    sizes = (10**4, 10**5) if quick else (10**4, 10**5, 10**6)
+    print("\nIsotonicMap().fit / one np.argsort of the scores (target <= 2 at 10^6 rows); "
+          f"CPU-time medians of {repeats} interleaved runs")
+    for n in sizes:
+        rng = np.random.default_rng(0)
+        p = rng.uniform(size=n)
+        yy = (rng.uniform(size=n) < p).astype(int)
+        s = proba_to_log_odds(p)
+        calls = max(1, 10**5 // n)
+        sorts, fits = [], []
+        for _ in range(repeats):
+            sorts.append(cpu(lambda s=s: np.argsort(s), calls))
+            fits.append(cpu(lambda s=s, yy=yy: IsotonicMap().fit(s, yy), calls))
+        ratios = np.array(fits) / np.array(sorts)
+        t_sort, t_fit = float(np.median(sorts)), float(np.median(fits))
+        print(f"  {n:>9,} rows: fit {1e3 * t_fit:8.3f} ms, argsort {1e3 * t_sort:8.3f} ms, "
+              f"ratio {t_fit / t_sort:.2f} (runs {ratios.min():.2f}-{ratios.max():.2f})")
 
-    t_sort = min(timed(np.argsort, s) for _ in range(5))
-    t_fit = min(timed(IsotonicMap().fit, s, yy) for _ in range(5))
-    print(f"\nIsotonicMap fit at {n:,} rows: {t_fit:.3f} s; one np.argsort: {t_sort:.3f} s; "
-          f"ratio {t_fit / t_sort:.2f} (target <= 2)")
+    # parts at the largest size, in the fit's order, each timed alone
+    y01 = yy.astype(float)
+    holder = {}
+
+    def order():
+        holder["s"], holder["label"] = iso._ordered_rows(s, y01)
+
+    def separation():
+        iso._separated_in_order(holder["s"], holder["label"])
+
+    def ties():
+        iso._tie_starts(holder["s"], np.ones(n, dtype=bool))
+
+    def levels():  # ties again inside, subtracted below; overwrites the labels
+        holder["levels"] = iso._unit_row_levels(holder["s"], holder["label"])
+
+    def ends():
+        distinct, first, last, k, g = holder["levels"]
+        iso._level_ends(distinct, first, last, np.clip(k / g, 0.0, 1.0))
+
+    parts = {"order (one packed sort)": order, "separation": separation, "ties": ties,
+             "levels (segments + PAV)": levels, "level ends": ends}
+    spent: dict[str, list[float]] = {name: [] for name in parts}
+    whole, sorts = [], []
+    pav_calls: list[float] = []
+    original_pav = iso.isotonic_regression
+
+    def timed_pav(*args, **kwargs):
+        t = time.process_time()
+        out = original_pav(*args, **kwargs)
+        pav_calls.append(time.process_time() - t)
+        return out
+
+    for _ in range(repeats):
+        sorts.append(cpu(lambda: np.argsort(s), 1))
+        whole.append(cpu(lambda: IsotonicMap().fit(s, yy), 1))
+        iso.isotonic_regression = timed_pav
+        try:
+            for name, fn in parts.items():
+                spent[name].append(cpu(fn, 1))
+        finally:
+            iso.isotonic_regression = original_pav
+    t_sort = float(np.median(sorts))
+    med = {name: float(np.median(v)) for name, v in spent.items()}
+    pav = float(np.median(pav_calls))
+    med["levels (segments + PAV)"] -= med["ties"]
+    rows = [("order (one packed sort)", med["order (one packed sort)"]),
+            ("separation", med["separation"]), ("ties", med["ties"]),
+            ("segments", med["levels (segments + PAV)"] - pav), ("SciPy PAV on the segments", pav),
+            ("level ends", med["level ends"])]
+    rows.append(("validation and the rest", float(np.median(whole)) - sum(t for _, t in rows)))
+    print(f"  parts at {n:,} rows (x one argsort; CPU-time medians; {CalibrationMap.__name__}"
+          ".fit validates first):")
+    for name, t in rows:
+        print(f"    {name:<28}{1e3 * t:8.3f} ms  {t / t_sort:5.2f}")
 
 
 def _option(argv: list[str], name: str) -> str | None:
@@ -407,13 +482,17 @@ def _option(argv: list[str], name: str) -> str | None:
 
 
 def main(argv: list[str]) -> None:
-    """Options: --quick, --no-large, --verbose (warnings per cell); --part I/N runs every N-th
+    """Options: --quick, --no-large, --verbose (warnings per cell), --isotonic-speed (only the
+    isotonic fit against one argsort, seconds); --part I/N runs every N-th
     data set starting at I and --save FILE writes its cells as JSON, so that parts can run in
     separate processes; --combine FILE [FILE ...] prints the summary of saved parts."""
     import json
 
     quick = "--quick" in argv
     t0 = time.process_time()
+    if "--isotonic-speed" in argv:
+        isotonic_speed(quick)
+        return
     if "--combine" in argv:
         files = argv[argv.index("--combine") + 1:]
         rows = [r for f in files for r in json.load(open(f, encoding="utf-8"))]

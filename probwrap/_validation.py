@@ -103,8 +103,8 @@ def check_scores(scores: Any, *, name: str = "scores", ndim: int | None = 1) -> 
             raise ValueError(f"`{name}` must be 2-d of shape (n, k) with k >= 2; got shape {arr.shape}.")
     if arr.shape[0] == 0:
         raise ValueError(f"`{name}` is empty; at least one row is needed.")
-    bad = ~np.isfinite(arr)
-    if bad.any():
+    if not np.isfinite(arr).all():
+        bad = ~np.isfinite(arr)
         where = np.argwhere(bad)[0]
         kind = "NaN" if np.isnan(arr[tuple(where)]) else "infinite"
         raise ValueError(

@@ -303,8 +303,12 @@ class IsotonicMap(CalibrationMap):
         if self.smooth_targets:
             # Platt's targets from the class counts (in rows, before any rescaling below)
             with np.errstate(over="ignore", invalid="ignore"):
-                n_pos = float(w @ y)
-                n_neg = float(w.sum()) - n_pos
+                if unit_rows:  # the same sums, exact: counts times a power of two
+                    n_pos = top * float(np.count_nonzero(y))
+                    n_neg = top * float(y.shape[0]) - n_pos
+                else:
+                    n_pos = float(w @ y)
+                    n_neg = float(w.sum()) - n_pos
             if not (np.isfinite(n_pos) and np.isfinite(n_neg)):
                 # counts beyond the largest double: (N + 1) / (N + 2) is 1 and 1 / (N + 2) is 0
                 # to double precision long before that, so capped counts give the same targets
