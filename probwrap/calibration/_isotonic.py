@@ -168,9 +168,9 @@ def _unit_row_levels(
     suffix at most, so at a boundary between blocks of means ``m1 < m2`` the last group of the
     first averages at most ``m1`` and the first group of the second at least ``m2``. The groups
     between two such rises are therefore pooled before the pass (in rows without ties: each run
-    of ones with the zeros after it: 166,501 segments for 10**6 rows whose probabilities are spread
-    evenly), SciPy's PAV runs on those segments, and each level's value is its count of positives over its count of rows
-    (one rounding).
+    of ones with the zeros after it; 166,501 segments for 10**6 rows whose probabilities are
+    spread evenly), SciPy's PAV runs on those segments, and each level's value is its count of
+    positives over its count of rows (one rounding).
 
     Returns the distinct scores, then per level the index of its first and last distinct score,
     its number of positives and its number of rows (both float).
