@@ -250,6 +250,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
     def _fit_on_heldout(self, ho: Any) -> CalibrationWrapper:
         """The calibration map (and ``method="auto"``'s choice) on held-out predictions."""
         self.response_ = ho.response
+        self._cross_fitted = ho.n_folds > 0
         self.clip_ = self._choose_clip(ho.values, ho.sample_weight)
         scores = self._to_scores(ho.values)
         w = self._count_scale_weights(ho.sample_weight)
@@ -295,6 +296,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
                 self.calibrator_ = self._fit_map(
                     CALIBRATION_METHODS[fallback](), scores, ho.y_index, w
                 )
+        self._warn_reversed(len(ho.y_index))
         return self
 
     def _warn_few_class_rows(self, counts: np.ndarray) -> None:
@@ -480,7 +482,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             # (see PlattMap)
             template = clone(template).set_params(limit_scores=True)
         if scores.ndim == 1:
-            return clone(template).fit(self._map_input(template, scores), y_index, sample_weight=w)
+            fitted = clone(template).fit(self._map_input(template, scores), y_index, sample_weight=w)
+            self._keep_order(fitted, y_index, w)
+            return fitted
         if template.supports_multiclass:
             m = clone(template)
             if type(start) is type(m) and type(m) is VectorScalingMap:
@@ -501,6 +505,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         S = self._map_input(template, ovr, log_odds=True)
         for k, m in zip(ks, fit_one_vs_rest(template, S, y_index, w, ks, start), strict=True):
             maps[k] = m
+            self._keep_order(m, np.asarray(y_index) == k, w)
         if not fitted.all():
             pooled = None
             if self.response_ == "decision_function" and fitted.sum() >= 2:
@@ -512,6 +517,58 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
                 )
             self._fill_absent_classes(template, maps, pos, total, pooled, stacklevel=5)
         return maps
+
+    def _keep_order(self, m: CalibrationMap, y01: np.ndarray, w: np.ndarray) -> None:
+        """For a model the wrapper cross-fits: a Platt map fitted with a negative slope keeps
+        the level only (slope 0, the constrained optimum, see ``PlattMap._hold_level``).
+
+        The map is fitted on the fold models' held-out scores and applied to the model refitted
+        on all rows. When the fold models' scores run against the labels (SVC(probability=True)
+        on 30 rows of scikit-learn's diabetes: Platt slope -3.25), the refitted model still
+        ranks the classes the way it was fitted to, and a decreasing map turns its ranking
+        upside down (test log loss 1.29 against the model's own 0.68). A frozen model's rows
+        are its own held-out rows: its map is kept as fitted (``_warn_reversed`` warns).
+        """
+        if (
+            getattr(self, "_cross_fitted", False)
+            and isinstance(m, PlattMap)
+            and getattr(m, "slope_", 0.0) < 0.0
+        ):
+            m._reversed_slope = m._hold_level(np.asarray(y01, dtype=float), w)
+
+    def _warn_reversed(self, n_rows: int) -> None:
+        """Warn when the fitted map ran against the model's scores: held at its level for a
+        cross-fitted model (``_keep_order``), or decreasing for a frozen one."""
+        maps = self.calibrator_ if isinstance(self.calibrator_, list) else [self.calibrator_]
+        held = [(k, m._reversed_slope) for k, m in enumerate(maps)
+                if hasattr(m, "_reversed_slope")]
+        falling = [(k, m.slope_) for k, m in enumerate(maps)
+                   if isinstance(m, PlattMap) and not hasattr(m, "_reversed_slope")
+                   and m.slope_ < 0.0]
+
+        def where(k: int) -> str:
+            return "" if len(maps) == 1 else f" for class {plain(self.classes_[k])!r}"
+
+        for k, slope in held:
+            warnings.warn(
+                f"CalibrationWrapper(method={plain(self.method_)!r}): the fold models' "
+                f"held-out scores run against the labels{where(k)} (Platt slope {slope:.3g} on "
+                f"{n_rows} held-out rows), so they show no usable order; the map gives every "
+                f"row the same probability, {float(maps[k].predict(np.zeros(1))[0]):.3g}, "
+                "instead of reversing the order of the model refitted on all rows. Check the "
+                "model on more labelled rows.",
+                UserWarning,
+                stacklevel=4,
+            )
+        for k, slope in falling:
+            warnings.warn(
+                f"CalibrationWrapper(method={plain(self.method_)!r}): the map decreases{where(k)} "
+                f"(Platt slope {slope:.3g} on {n_rows} held-out rows): the model's higher scores "
+                "get lower probabilities. Check that the model and the labels match (the same "
+                "positive class).",
+                UserWarning,
+                stacklevel=4,
+            )
 
     def _fill_absent_classes(self, template, maps, pos, total, pooled, stacklevel) -> None:
         """Entries of a one-vs-rest list for the classes that have no map (``None``).

@@ -10,7 +10,7 @@ from scipy.special import expit
 from sklearn.exceptions import ConvergenceWarning
 
 from .._validation import plain, power_of_two_unit
-from ._base import CalibrationMap, rule_of_succession_targets
+from ._base import CalibrationMap, count_weights, rule_of_succession_targets
 
 __all__ = ["PlattMap"]
 
@@ -265,6 +265,30 @@ class PlattMap(CalibrationMap):
 
     def _uses_counts(self) -> bool:
         return bool(self.smooth_targets)
+
+    def _hold_level(self, y01: np.ndarray, w: np.ndarray) -> float:
+        """Replace a fitted negative slope by the best fit with a slope of 0 (the optimum of
+        the fit constrained to a non-decreasing map, the log-likelihood being concave in the
+        slope): every score then gets the weighted mean target, the intercept-only logistic
+        fit ``logit(sum(w t) / sum(w))``. ``y01`` and ``w`` are the labels (1 for this map's
+        class) and weights the map was fitted on. Returns the slope that was replaced.
+
+        Used by :class:`~probwrap.CalibrationWrapper` for a model it cross-fits, whose map is
+        applied to a model refitted on all rows: a decreasing map would reverse the order of
+        that model, which was fitted to rank the classes the other way.
+        """
+        slope = float(self.slope_)
+        w = np.asarray(w, dtype=float)
+        y01 = np.asarray(y01, dtype=float)
+        if self.smooth_targets:
+            w = count_weights(w)[0]
+            t = smoothed_binary_targets(y01, w, self._rest_classes)
+        else:
+            t = y01
+        mean = float(np.clip((w @ t) / w.sum(), 1e-300, 1.0 - 1e-16))
+        self.slope_ = 0.0
+        self.intercept_ = float(np.log(mean) - np.log1p(-mean))
+        return slope
 
     def _limited(self, scores: np.ndarray) -> np.ndarray:
         """The scores clipped to ``score_limits_`` (when set)."""
