@@ -9,6 +9,7 @@ multiclass rule (tuned or certified for recall floors), and how actions and capa
 from __future__ import annotations
 
 import numbers
+import warnings
 from collections.abc import Mapping
 from typing import Any
 
@@ -19,6 +20,7 @@ from ._column_models import ProbabilityColumn
 from ._cost_policy_summary import CURVE_POINTS, SMALL_HELDOUT_ROWS, _heldout_summary
 from ._heldout import row_count
 from ._validation import plain
+from .calibration._base import WeightScaleWarning, count_weights
 from .decision import (
     apply_class_offsets,
     capacity_cutoff,
@@ -255,6 +257,28 @@ class _RuleFitting:
             stacklevel=4,
         )
 
+    def _warn_weight_scale(self, ho) -> None:
+        """Warn when the tuned rule's settling test (and, binary, the map behind its anchor)
+        reads ``sample_weight`` as relative weights: they sum to less than the rows of weight
+        > 0, so the rows count as Kish's effective sample size, where whole-number weights of
+        the same ratios would count as that many rows and may settle elsewhere (scikit-learn's
+        breast cancer, a frozen 7-nearest-neighbour model, 150 held-out rows with weights 1-3:
+        cutoff 0.643 as counts, 0.357 divided by their sum). ``CalibrationWrapper`` warns the
+        same way for its map."""
+        if getattr(ho, "from_tally", False):
+            return
+        w = np.asarray(ho.sample_weight)
+        out, rescaled = count_weights(w[w > 0])
+        if rescaled:
+            warnings.warn(
+                f"{type(self).__name__}: `sample_weight` sums to less than the number of rows, "
+                "so the weights cannot be row frequencies; the test that settles the tuned rule "
+                f"counts the held-out rows as Kish's effective sample size ({out.sum():.4g}). "
+                "Pass whole-number weights if they are row counts.",
+                WeightScaleWarning,
+                stacklevel=4,
+            )
+
     def _fit_cutoff(self, ho, p, matrix, share) -> None:
         # p: the held-out probabilities of the second class (None without held-out rows)
         if self.strategy == "fixed":
@@ -269,6 +293,7 @@ class _RuleFitting:
             self.cutoff_ = g.cutoff
             return
         elif self.strategy == "tuned" and self.costs is not None:
+            self._warn_weight_scale(ho)
             keep = self.keep_heldout or np.count_nonzero(ho.sample_weight) <= SMALL_HELDOUT_ROWS
             # beyond SMALL_HELDOUT_ROWS the curve is kept thinned, and the search builds only
             # the kept points (the full curve would be three arrays as long as the rows)
@@ -364,6 +389,7 @@ class _RuleFitting:
             self.guarantee_ = g
             offsets = g.offsets
         elif self.strategy == "tuned" and self.costs is not None:
+            self._warn_weight_scale(ho)
             res = tune_class_offsets(proba, ho.y_index, costs, sample_weight=ho.sample_weight)
             offsets = settle_class_offsets(proba, ho.y_index, costs, res.offsets,
                                            sample_weight=ho.sample_weight).offsets
