@@ -141,10 +141,11 @@ def check_rows_match(X: Any, n: int) -> None:
 
 def _fit_predict_fold(
     estimator: Any, X: Any, y: np.ndarray, train: np.ndarray, test: np.ndarray,
-    params: dict, response: str,
-) -> tuple[np.ndarray, np.ndarray]:
+    params: dict, response: str, keep: bool = False,
+) -> tuple[np.ndarray, np.ndarray, Any]:
     """Fit a clone of ``estimator`` on the ``train`` rows (labels as given) and return its
-    ``classes_`` and ``response`` on the ``test`` rows; row-wise ``params`` follow the rows."""
+    ``classes_``, ``response`` on the ``test`` rows and (``keep``) the fitted clone, else None;
+    row-wise ``params`` follow the rows."""
     n = y.shape[0]
     fold_params = {
         key: (_safe_indexing(value, train)
@@ -154,7 +155,31 @@ def _fit_predict_fold(
     # (a class absent from the training rows is reported once by the caller, for every fold)
     model = clone(estimator).fit(_safe_indexing(X, train), y[train], **fold_params)
     out = np.asarray(getattr(model, response)(_safe_indexing(X, test)), dtype=float)
-    return np.asarray(model.classes_), out
+    return np.asarray(model.classes_), out, (model if keep else None)
+
+
+def fold_columns(fold_classes: np.ndarray, out: np.ndarray, classes: np.ndarray,
+                 response: str) -> np.ndarray:
+    """A fold model's ``response`` on some rows, in the columns of all ``classes``: a class
+    absent from the fold's training rows gets probability 0, or a score 50 below the row's
+    lowest score."""
+    k = classes.shape[0]
+    cols = np.array([np.flatnonzero(classes == c)[0] for c in fold_classes])
+    if out.ndim == 1 and k == 2 and fold_classes.shape[0] == 2:
+        return out
+    if out.ndim == 1:
+        raise ValueError(
+            f"Only {fold_classes.shape[0]} classes in a training fold but {k} in all "
+            f"rows: {response} of such a fold gives one score per row, which cannot "
+            "stand for every class. Use fewer folds or more rows of the rare classes."
+        )
+    block = np.zeros((out.shape[0], k))
+    block[:, cols] = out
+    missing = np.setdiff1d(np.arange(k), cols)
+    if response != "predict_proba" and missing.size:
+        # a score far below every other score of that row
+        block[:, missing] = out.min(axis=1, keepdims=True) - 50.0
+    return block
 
 
 def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray) -> np.ndarray | None:
@@ -323,6 +348,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         """
         if self.estimator is None:
             raise ValueError("`estimator` must be a classifier; got None.")
+        self._fold_models = None  # set by _cross_fit for a wrapper that keeps them
         if _is_dask(X) or _is_dask(y) or _is_dask(sample_weight):
             # Dask input (frozen estimators only): predictions are tallied block by block on the
             # cluster; the held-out rows are the tally's weighted (bin, class) rows.
@@ -526,33 +552,22 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         in its column, or a score 50 below the row's lowest score.
         """
         X = indexable(X)[0]  # sparse formats without row indexing become CSR, as in scikit-learn
+        keep = bool(getattr(self, "_keep_fold_models", False))
         results = Parallel(n_jobs=self.n_jobs)(
-            delayed(_fit_predict_fold)(self.estimator, X, y, train, test, est_params, response)
+            delayed(_fit_predict_fold)(self.estimator, X, y, train, test, est_params, response,
+                                       keep)
             for train, test in splits
         )
         n = y.shape[0]
-        k = classes.shape[0]
         values = None
-        for (_, test), (fold_classes, out) in zip(splits, results, strict=True):
-            cols = np.array([np.flatnonzero(classes == c)[0] for c in fold_classes])
-            if out.ndim == 1 and k == 2 and fold_classes.shape[0] == 2:
-                block = out
-            elif out.ndim == 1:
-                raise ValueError(
-                    f"Only {fold_classes.shape[0]} classes in a training fold but {k} in all "
-                    f"rows: {response} of such a fold gives one score per row, which cannot "
-                    "stand for every class. Use fewer folds or more rows of the rare classes."
-                )
-            else:
-                block = np.zeros((out.shape[0], k))
-                block[:, cols] = out
-                missing = np.setdiff1d(np.arange(k), cols)
-                if response != "predict_proba" and missing.size:
-                    # a score far below every other score of that row
-                    block[:, missing] = out.min(axis=1, keepdims=True) - 50.0
+        for (_, test), (fold_classes, out, _) in zip(splits, results, strict=True):
+            block = fold_columns(fold_classes, out, classes, response)
             if values is None:
                 values = np.empty((n,) + block.shape[1:], dtype=float)
             values[test] = block
+        # the fold models, for a wrapper that scores new rows with them too (PriorShiftWrapper)
+        self._fold_models = [(model, fold_classes) for fold_classes, _, model in results] \
+            if keep else None
         return values
 
     # -- prediction helpers ----------------------------------------------------------------

@@ -98,6 +98,7 @@ def prior_by_batch(
     *,
     batch_size: int | None = None,
     sample_weight: Any = None,
+    fold_proba: Any = None,
 ) -> np.ndarray:
     """Estimate the class priors batch by batch (for example week by week).
 
@@ -114,6 +115,9 @@ def prior_by_batch(
     batch_size : int, default=None
         Consecutive batches of this many rows (the last one may be shorter); labelled 0, 1, ...
     sample_weight : array-like of shape (n,), default=None
+    fold_proba : sequence of array-like of shape (n, k), default=None
+        The same rows' posteriors from each fold model of a cross-fitted model, for an
+        estimator fitted with ``source_fold`` (see :meth:`PriorEstimator.estimate`).
 
     Warns
     -----
@@ -201,7 +205,10 @@ def prior_by_batch(
         rows = inverse.ravel() == b
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            res = estimator.estimate(p[rows], w[rows], random_state=rng.randint(2**31 - 1))
+            res = estimator.estimate(
+                p[rows], w[rows], random_state=rng.randint(2**31 - 1),
+                fold_proba=None if fold_proba is None else [np.asarray(f)[rows] for f in fold_proba],
+            )
         for item in caught:
             if issubclass(item.category, PriorIntervalConflictWarning):
                 conflicts.append((uniq[b], str(item.message)))

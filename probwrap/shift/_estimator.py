@@ -34,7 +34,7 @@ from ._estimate import (
     check_class_names,
     name_classes,
 )
-from ._interval import score_interval
+from ._interval import fold_shares, score_interval
 from ._resample import (  # noqa: F401  (_interval_from_draws: imported from here elsewhere)
     _interval_from_draws,
     _Resampling,
@@ -216,14 +216,17 @@ class PriorEstimator(_Resampling):
     # -- fitting -------------------------------------------------------------------------------
     def fit(
         self, proba: Any, y: Any, sample_weight: Any = None, *, effective_rows: float | None = None,
-        class_names: Any = None,
+        class_names: Any = None, source_fold: Any = None,
     ) -> PriorEstimator:
         """Learn from held-out posteriors ``proba`` (n, k) and class indices ``y`` in 0..k-1.
 
         ``effective_rows`` overrides Kish's effective number of labelled rows (for rows that
         are bins of a tally, whose weights are counts of many rows). ``class_names`` (one label
         per column, kept as ``class_names_``) names the classes in warnings and errors, which
-        otherwise name them by column index.
+        otherwise name them by column index. ``source_fold`` (one integer per row, 0 .. K - 1,
+        K >= 2) says which of K fold models of a cross-fitted model gave each row's posterior;
+        :meth:`estimate` then takes the unlabelled rows' posteriors from every fold model too
+        (``fold_proba``) for the score interval (see :func:`score_interval`).
         """
         self._check_params()
         p = check_proba(proba, name="proba", ndim=2)
@@ -244,6 +247,7 @@ class PriorEstimator(_Resampling):
         self.class_names_ = names
         self._src = (p.copy(), np.asarray(y_idx, dtype=int), w)
         self._src_rows = None  # rows behind each entry of _src (None: one row each)
+        self._src_fold = self._check_source_fold(source_fold, p.shape[0])
         self._boot = None
         self.n_classes_ = k
         self.n_source_effective_ = float(effective_rows) if effective_rows else _kish(w)
@@ -347,6 +351,41 @@ class PriorEstimator(_Resampling):
                 self._class_scores = moments
         return moments
 
+    @staticmethod
+    def _check_source_fold(source_fold: Any, n: int) -> np.ndarray | None:
+        """``source_fold`` as integers 0 .. K - 1 (K >= 2) per labelled row, or None."""
+        if source_fold is None:
+            return None
+        f = np.asarray(source_fold)
+        if (f.shape != (n,) or f.dtype.kind not in "iu" or f.min(initial=0) < 0
+                or np.unique(f).shape[0] < 2 or np.unique(f).shape[0] != int(f.max()) + 1):
+            raise ValueError(
+                "`source_fold` must give every labelled row its fold as an integer 0 .. K - 1, "
+                f"every fold used and K >= 2; got {plain(f.tolist()[:5])!r}... of shape "
+                f"{f.shape} for {n} rows."
+            )
+        return f.astype(np.intp)
+
+    def _refit_folds(self, fold_proba: Any, n_rows: int) -> tuple | None:
+        """``(calibrated fold posteriors (K, n, k), fold of each kept labelled row)`` when
+        ``fold_proba`` is given and the labelled rows were fitted with ``source_fold`` and are
+        still kept as rows; else None."""
+        if fold_proba is None:
+            return None
+        fold = getattr(self, "_src_fold", None)
+        src = self._source_rows()
+        if fold is None or src is None or self._source_row_counts() is not None \
+                or fold.shape[0] != src[1].shape[0]:
+            return None
+        n_folds = int(fold.max()) + 1
+        fp = [self._checked_proba(f) for f in fold_proba]
+        if len(fp) != n_folds or any(f.shape[0] != n_rows for f in fp):
+            raise ValueError(
+                f"`fold_proba` must hold one (n, {self.n_classes_}) array of posteriors per fold "
+                f"({n_folds} folds, n = {n_rows} rows); got {len(fp)} arrays."
+            )
+        return np.stack([self.calibrate(f) for f in fp]), fold
+
     def _names(self) -> tuple | None:
         """Labels of the classes for messages (None: by column index)."""
         return getattr(self, "class_names_", None)
@@ -425,6 +464,7 @@ class PriorEstimator(_Resampling):
         random_state: Any = None,
         effective_rows: float | None = None,
         interval: bool = True,
+        fold_proba: Any = None,
     ) -> PriorEstimate:
         """Estimate the class priors of unlabelled rows.
 
@@ -442,6 +482,13 @@ class PriorEstimator(_Resampling):
             tally).
         interval : bool, default=True
             Whether to compute the bootstrap interval (when ``n_resamples > 0``).
+        fold_proba : sequence of array-like of shape (n, k), default=None
+            The same rows' posteriors from each fold model, in fold order, for an estimator
+            fitted with ``source_fold``: the score interval (default) then compares the
+            unlabelled rows' scores averaged over the fold models with the labelled rows'
+            held-out scores of the same models (:func:`score_interval`), so it carries the
+            difference between the fold models and a model refit on all labelled rows that
+            scored ``proba``. Ignored for other intervals and without ``source_fold``.
 
         Returns
         -------
@@ -509,11 +556,14 @@ class PriorEstimator(_Resampling):
             if not point.identified:
                 bounds = np.column_stack([np.zeros(k), np.ones(k)])
             elif getattr(self, "interval", "score") == "score" and k == 2 and source is not None:
+                refit = self._refit_folds(fold_proba, p_raw.shape[0])
                 (lo, hi), consistent = score_interval(
                     p, self.calibrate(source[0]), source[1], src, sample_weight=w,
                     source_sample_weight=source[2], effective_rows=n_eff,
                     source_effective_rows=n_src, confidence_level=self.confidence_level,
                     centre=float((ml if ml is not None else point.prior)[1]),
+                    fold_proba=None if refit is None else refit[0],
+                    source_fold=None if refit is None else refit[1],
                 )
                 if not consistent:
                     warnings.warn(
@@ -535,8 +585,19 @@ class PriorEstimator(_Resampling):
                 # more than two classes: the labelled rows' class-conditional mean scores
                 # re-weighted to the shares (moment_prior_interval); the delta method on EM's
                 # fixed point missed under real shifts where the calibration errs on new rows
-                found = moment_prior_interval((m_t, c_t, n_eff), self._class_score_moments(),
-                                              self.confidence_level)
+                refit = self._refit_folds(fold_proba, p_raw.shape[0])
+                target, moments = (m_t, c_t, n_eff), self._class_score_moments()
+                if refit is not None:
+                    # the unlabelled rows' scores averaged over the fold models, against the
+                    # labelled rows re-weighted so each fold holds its share of every class
+                    # (as score_interval does for two classes)
+                    share, w_fold = fold_shares(refit[1], source[1], source[2], refit[0].shape[0])
+                    u_bar = np.tensordot(share, np.stack([_score_rows(f, src) for f in refit[0]]),
+                                         axes=1)
+                    target = (*_mean_cov(u_bar, w)[:2], n_eff)
+                    moments = class_score_moments(class_score_sums(
+                        self.calibrate(source[0]), source[1], w_fold, src))
+                found = moment_prior_interval(target, moments, self.confidence_level)
                 bounds = (np.column_stack([np.zeros(k), np.ones(k)]) if found is None
                           else found[0])
                 ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)

@@ -10,7 +10,7 @@ from scipy.special import ndtr, ndtri
 
 from .._validation import plain
 
-__all__ = ["bca_interval", "jackknife_acceleration", "score_interval"]
+__all__ = ["bca_interval", "fold_shares", "jackknife_acceleration", "score_interval"]
 
 
 def jackknife_acceleration(jackknife: Sequence[Any]) -> np.ndarray:
@@ -129,6 +129,35 @@ def bca_interval(
     )
 
 
+def fold_shares(
+    source_fold: Any, y: Any, sample_weight: np.ndarray, n_folds: int
+) -> tuple[np.ndarray, np.ndarray]:
+    """Each fold's share of the labelled weight, and the labelled weights re-weighted within
+    each class so that every fold holds that share of the class (see :func:`score_interval`).
+
+    Returns ``(share, weights)``; a class with no row in a fold spreads the fold's share over
+    its other folds (its weight there is 0). With stratified folds the factors are close to 1.
+    """
+    f = np.asarray(source_fold).astype(int)
+    yy = np.asarray(y).astype(int)
+    w = np.asarray(sample_weight, dtype=float)
+    if f.shape != w.shape or f.min(initial=0) < 0 or f.max(initial=0) >= n_folds:
+        raise ValueError(
+            f"`source_fold` must give a fold in 0..{n_folds - 1} for each labelled row; got "
+            f"shape {f.shape} for {w.shape[0]} rows."
+        )
+    share = np.bincount(f, weights=w, minlength=n_folds) / w.sum()
+    out = w.copy()
+    for c in np.unique(yy):
+        rows = yy == c
+        per = np.bincount(f[rows], weights=w[rows], minlength=n_folds)
+        target = np.where(per > 0, share, 0.0)
+        target = target / target.sum()
+        scale = np.where(per > 0, target * w[rows].sum() / np.maximum(per, 1e-300), 0.0)
+        out[rows] = w[rows] * scale[f[rows]]
+    return share, out
+
+
 def score_interval(
     proba: Any,
     source_proba: Any,
@@ -143,6 +172,8 @@ def score_interval(
     n_grid: int = 241,
     centre: float | None = None,
     small_sample: bool = True,
+    fold_proba: Any = None,
+    source_fold: Any = None,
 ) -> tuple[np.ndarray, bool]:
     r"""Two-sample score interval for the positive-class prior of unlabelled rows (two classes).
 
@@ -174,6 +205,21 @@ def score_interval(
     (the labelled class shares taken as exact, which is right here: the shares in the
     statistic are the candidate prior, not an estimate).
 
+    With a model refit on the labelled rows, the labelled rows' posteriors come from fold models
+    (cross-fitting) and the unlabelled rows' from the model refit on all of them; the two
+    differ by how much a refit moves with the draw of the labelled rows, which neither
+    sample's error carries. ``fold_proba`` (the unlabelled rows scored by every fold model) and
+    ``source_fold`` (the fold of every labelled row) remove that difference: the unlabelled
+    side takes each row's score averaged over the fold models, :math:`\bar u(x) = \sum_k
+    \omega_k u_k(x)` with :math:`\omega_k` the fold's share of the labelled weight, and the
+    labelled side re-weights each class's rows so that every fold holds that same share of
+    them. Both sides then mix the same fold models in the same proportions, and for each fold
+    the equality of means holds exactly (its model never saw the fold's rows nor the
+    unlabelled rows): the cross-fitted moment condition averaged over folds and solved once
+    (Chernozhukov et al. 2018, "Double/debiased machine learning", Econometrics Journal 21,
+    Definition 3.2, DML2), whose error is the two samples' sampling error to first order for
+    any model, because the condition holds for every fixed model.
+
     Parameters
     ----------
     proba : array-like of shape (n, 2)
@@ -197,6 +243,11 @@ def score_interval(
     small_sample : bool, default=True
         Refer the statistic to Student's t with Satterthwaite's degrees of freedom (False:
         chi-square with one degree of freedom, the large-sample limit).
+    fold_proba : array-like of shape (n_folds, n, 2), default=None
+        Calibrated posteriors of the unlabelled rows from each fold model (see above).
+    source_fold : array-like of shape (m,), default=None
+        Fold (0 .. n_folds - 1) whose model gave each labelled row's posterior; required with
+        ``fold_proba``.
 
     Returns
     -------
@@ -238,6 +289,17 @@ def score_interval(
     q_t, q_s = p_t / src, p_s / src
     a_t, d_t = q_t[:, 0], q_t[:, 1] - q_t[:, 0]
     tiny = np.finfo(float).tiny
+    folds = None
+    if fold_proba is not None:
+        fp = np.asarray(fold_proba, dtype=float)
+        if source_fold is None or fp.ndim != 3 or fp.shape[1:] != p_t.shape:
+            raise ValueError(
+                "`fold_proba` must have shape (n_folds,) + proba.shape, with `source_fold` "
+                f"given; got {fp.shape} and proba {p_t.shape}."
+            )
+        fp = fp / src
+        share, w_s = fold_shares(source_fold, y_s, w_s, fp.shape[0])
+        folds = (fp[:, :, 0], fp[:, :, 1] - fp[:, :, 0], share)
     strata = []  # per class: score pieces, normalised weights, effective rows
     for c in (0, 1):
         rows = y_s == c
@@ -259,7 +321,13 @@ def score_interval(
         out = np.empty(t.shape[0])
         for lo in range(0, t.shape[0], 32):  # memory: rows x 32 at a time
             tc = t[lo:lo + 32]
-            u_t = d_t[:, None] / np.maximum(a_t[:, None] + tc * d_t[:, None], tiny)
+            if folds is None:
+                u_t = d_t[:, None] / np.maximum(a_t[:, None] + tc * d_t[:, None], tiny)
+            else:  # each row's score averaged over the fold models
+                a_f, d_f, share_f = folds
+                u_t = np.zeros((a_t.shape[0], tc.shape[0]))
+                for s_k, a_k, d_k in zip(share_f, a_f, d_f, strict=True):
+                    u_t += s_k * d_k[:, None] / np.maximum(a_k[:, None] + tc * d_k[:, None], tiny)
             m_t = wt @ u_t
             v_t = np.maximum(wt @ (u_t * u_t) - m_t**2, 0.0)
             m_s = np.zeros(tc.shape[0])

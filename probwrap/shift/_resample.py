@@ -84,6 +84,7 @@ class _Resampling:
         proba = np.column_stack([expit(-mean), expit(mean)])
         self._src = (proba, (uniq % 2).astype(int), total)
         self._src_rows = total * total / square
+        self._src_fold = None  # bins mix the folds' rows
         self._boot = None
 
     def _drop_source_for_analytic(self) -> None:
@@ -96,6 +97,7 @@ class _Resampling:
                 and getattr(self, "_labelled_cov", None) is not None):
             self._src = None
             self._src_rows = None
+            self._src_fold = None
             self._boot = None
 
     # -- the pieces the bootstrap re-uses ------------------------------------------------------

@@ -1,0 +1,256 @@
+"""A base model refit on the labelled rows: the default interval scores the unlabelled rows with
+the cross-fitting's fold models too (probwrap.shift.score_interval, ``fold_proba``).
+
+The labelled rows' posteriors come from fold models and the unlabelled rows' from the model
+refit on all labelled rows; the interval compares the unlabelled rows' scores averaged over the
+fold models (each weighted by its fold's share of the labelled weight) with the labelled rows
+re-weighted so every fold holds that share of each class: the cross-fitted moment condition
+averaged over folds (Chernozhukov et al. 2018, Econometrics Journal 21, Definition 3.2, DML2),
+which holds for every fixed model under prior shift (Lipton, Wang & Smola 2018, section 2).
+Coverage on scikit-learn's and statsmodels' bundled data: benchmarks/shift.py --only=refit.
+"""
+
+from __future__ import annotations
+
+import pickle
+import warnings
+
+import numpy as np
+import pytest
+from scipy.stats import chi2
+from scipy.stats import f as f_dist
+from sklearn.base import clone
+from sklearn.datasets import load_breast_cancer, load_wine
+from sklearn.frozen import FrozenEstimator
+from sklearn.linear_model import LogisticRegression
+from sklearn.model_selection import StratifiedKFold
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+
+from probwrap import CalibrationWrapper, PriorShiftWrapper
+from probwrap.shift import score_interval
+from probwrap.shift._analytic import moment_prior_interval
+from probwrap.shift._resample import _widen
+
+
+def _model():
+    return make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000))
+
+
+@pytest.fixture(scope="module")
+def cancer_split():
+    # scikit-learn's bundled breast-cancer data, "malignant" as the positive class: 250
+    # labelled rows at random, unlabelled rows resampled from the others at prevalence 0.2
+    X, y = load_breast_cancer(return_X_y=True)
+    y = (y == 0).astype(int)
+    rng = np.random.default_rng(3)
+    order = rng.permutation(y.shape[0])
+    lab, pool = order[:250], order[250:]
+    cls = (rng.uniform(size=300) < 0.2).astype(int)
+    rows = np.where(cls == 1, rng.choice(pool[y[pool] == 1], 300),
+                    rng.choice(pool[y[pool] == 0], 300))
+    return X[lab], y[lab], X[rows]
+
+
+def _fit_adapt(model, X, y, X_new):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return model.fit(X, y).adapt(X_new)
+
+
+def _direct_folds(base, X, y, X_new, seed, n_folds=3):
+    """The wrapper's folds rebuilt outside it: StratifiedKFold(shuffle, random_state=seed),
+    a clone fitted on each training part; returns (fold of each labelled row, fold models'
+    posteriors of the new rows)."""
+    fold = np.empty(y.shape[0], dtype=int)
+    proba = []
+    for i, (train, test) in enumerate(
+            StratifiedKFold(n_folds, shuffle=True, random_state=seed).split(X, y)):
+        fold[test] = i
+        proba.append(clone(base).fit(X[train], y[train]).predict_proba(X_new))
+    return fold, np.stack(proba)
+
+
+def test_refit_interval_is_the_fold_averaged_score_interval(cancer_split):
+    X, y, X_new = cancer_split
+    model = _fit_adapt(PriorShiftWrapper(_model(), cv=3, random_state=0), X, y, X_new)
+    est = model.prior_estimator_
+    fold, fold_raw = _direct_folds(_model(), X, y, X_new, seed=0)
+    # the wrapper kept the same folds and fold models as a direct rebuild
+    np.testing.assert_array_equal(est._src_fold, fold)
+    np.testing.assert_allclose(np.stack([m.predict_proba(X_new) for m, _ in model._fold_models]),
+                               fold_raw, rtol=1e-12)
+    p_t = est.calibrate(model.estimator_.predict_proba(X_new))
+    p_s, y_s, w_s = est._source_rows()
+    ml = float(model.prior_estimate_.ml_prior[1])
+    kwargs = dict(effective_rows=300.0, source_effective_rows=250.0, centre=ml)
+    with_folds, ok = score_interval(
+        p_t, est.calibrate(p_s), y_s, est.source_prior_,
+        fold_proba=np.stack([est.calibrate(f) for f in fold_raw]), source_fold=fold, **kwargs)
+    without, _ = score_interval(p_t, est.calibrate(p_s), y_s, est.source_prior_, **kwargs)
+    assert ok
+    expected = _widen(np.array([[1 - with_folds[1], 1 - with_folds[0]], with_folds]),
+                      model.target_prior_, model.prior_estimate_.ml_prior, 300.0, 0.95)
+    np.testing.assert_allclose(model.target_prior_interval_, expected, rtol=0, atol=1e-12)
+    # the earlier interval (refit model only) is another one
+    assert np.max(np.abs(with_folds - without)) > 1e-4
+
+
+def test_refit_endpoints_solve_the_fold_averaged_statistic_in_numpy(cancer_split):
+    # At each end of the 95 % interval the statistic, computed here from its definition in
+    # NumPy (unlabelled scores averaged over the fold models with weights = the folds' shares
+    # of the labelled rows; each class's labelled rows re-weighted so every fold holds that
+    # share; Welch-Satterthwaite degrees of freedom, Welch 1947), has tail probability 0.05.
+    X, y, X_new = cancer_split
+    model = _fit_adapt(PriorShiftWrapper(_model(), cv=3, random_state=0), X, y, X_new)
+    est = model.prior_estimator_
+    fold, fold_raw = _direct_folds(_model(), X, y, X_new, seed=0)
+    src = est.source_prior_
+    fp = np.stack([est.calibrate(f) for f in fold_raw]) / src
+    p_s, y_s, _ = est._source_rows()
+    q_s = est.calibrate(p_s) / src
+    n_t, n_s = X_new.shape[0], y.shape[0]
+    share = np.bincount(fold, minlength=3) / n_s
+    w = np.array([share[fold[i]] * np.sum(y_s == y_s[i]) / np.sum((y_s == y_s[i])
+                  & (fold == fold[i])) for i in range(n_s)])
+
+    def tail(t):
+        u_t = sum(share[k] * (fp[k, :, 1] - fp[k, :, 0])
+                  / ((1 - t) * fp[k, :, 0] + t * fp[k, :, 1]) for k in range(3))
+        var = u_t.var() / (n_t - 1)
+        parts = [var]
+        m_s = 0.0
+        for c, pi_c in ((0, 1 - t), (1, t)):
+            rows = y_s == c
+            u_c = (q_s[rows, 1] - q_s[rows, 0]) / ((1 - t) * q_s[rows, 0] + t * q_s[rows, 1])
+            wc = w[rows] / w[rows].sum()
+            mean = wc @ u_c
+            n_c = n_s * rows.sum() / n_s
+            parts.append(pi_c**2 * (wc @ (u_c - mean) ** 2) / (n_c - 1))
+            m_s += pi_c * mean
+        total = sum(parts)
+        nu = total**2 / (parts[0] ** 2 / (n_t - 1) + sum(
+            parts[1 + c] ** 2 / (n_s * np.mean(y_s == c) - 1) for c in (0, 1)))
+        return f_dist.sf((u_t.mean() - m_s) ** 2 / total, 1, nu)
+
+    p_s_cal, _, _ = est._source_rows()
+    (lo, hi), _ = score_interval(
+        est.calibrate(model.estimator_.predict_proba(X_new)), est.calibrate(p_s_cal), y_s, src,
+        fold_proba=fp * src, source_fold=fold, effective_rows=float(n_t),
+        source_effective_rows=float(n_s))
+    assert tail(lo) == pytest.approx(0.05, abs=2e-6)
+    assert tail(hi) == pytest.approx(0.05, abs=2e-6)
+    assert tail(0.5 * (lo + hi)) > 0.05
+    assert chi2.ppf(0.95, 1) > 0  # (the chi-square scale maps the same tail probability)
+
+
+def test_frozen_model_interval_is_unchanged(cancer_split):
+    # a model fitted elsewhere and frozen: no fold models, the interval exactly as before
+    # (score_interval without fold_proba, the two-sample score interval)
+    X, y, X_new = cancer_split
+    frozen = FrozenEstimator(_model().fit(X[:100], y[:100]))
+    model = _fit_adapt(PriorShiftWrapper(frozen, random_state=0), X[100:], y[100:], X_new)
+    est = model.prior_estimator_
+    assert getattr(model, "_fold_models", None) is None
+    assert getattr(est, "_src_fold", None) is None
+    p_s, y_s, w_s = est._source_rows()
+    (lo, hi), _ = score_interval(
+        est.calibrate(frozen.predict_proba(X_new)), est.calibrate(p_s), y_s, est.source_prior_,
+        effective_rows=300.0, source_effective_rows=150.0,
+        centre=float(model.prior_estimate_.ml_prior[1]))
+    expected = _widen(np.array([[1 - hi, 1 - lo], [lo, hi]]), model.target_prior_,
+                      model.prior_estimate_.ml_prior, 300.0, 0.95)
+    np.testing.assert_array_equal(model.target_prior_interval_, expected)
+
+
+def test_only_the_prior_shift_wrapper_keeps_fold_models(cancer_split):
+    X, y, _ = cancer_split
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        cal = CalibrationWrapper(_model(), method="platt", cv=3).fit(X, y)
+        shift = PriorShiftWrapper(_model(), cv=4).fit(X, y)
+    assert cal._fold_models is None
+    assert len(shift._fold_models) == 4
+    # refitting the same wrapper on a frozen model drops them
+    shift.set_params(estimator=FrozenEstimator(shift.estimator_))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        shift.fit(X, y)
+    assert shift._fold_models is None and shift.prior_estimator_._src_fold is None
+    # and a pickled refit wrapper gives the same interval
+    refit = _fit_adapt(PriorShiftWrapper(_model(), cv=3, random_state=1), X, y, X[:200])
+    again = pickle.loads(pickle.dumps(refit))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        again.adapt(X[:200])
+    np.testing.assert_array_equal(again.target_prior_interval_, refit.target_prior_interval_)
+
+
+def test_monitor_batches_carry_the_fold_models(cancer_split):
+    # one batch of monitor is the adapt estimate of the same rows, with the same interval
+    X, y, X_new = cancer_split
+    model = _fit_adapt(PriorShiftWrapper(_model(), cv=3, random_state=0), X, y, X_new)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        table = model.monitor(X_new, batch_size=X_new.shape[0])
+    np.testing.assert_allclose(np.column_stack([table["lower"][0], table["upper"][0]]),
+                               model.target_prior_interval_, atol=1e-12)
+
+
+def test_bootstrap_interval_with_a_refit_model_warns(cancer_split):
+    # the bootstrap intervals resample rows and do not read the fold models: adapt says so
+    # (and does not for a frozen model, which has no refit to leave out)
+    X, y, X_new = cancer_split
+    model = PriorShiftWrapper(_model(), cv=3, interval="bca", n_resamples=30, random_state=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        model.fit(X, y)
+    assert model._fold_proba(X_new) is None
+    with pytest.warns(UserWarning, match="does not carry how much that refit moves"):
+        model.adapt(X_new)
+    frozen = PriorShiftWrapper(FrozenEstimator(model.estimator_), interval="bca",
+                               n_resamples=30, random_state=0)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        frozen.fit(X, y).adapt(X_new)
+    assert not [w for w in caught if "refit" in str(w.message)]
+
+
+def test_multiclass_refit_interval_is_the_fold_averaged_moment_interval():
+    # scikit-learn's bundled wine data (three classes): 120 labelled rows, the other 58
+    # unlabelled. The class-moment interval with fold models: the unlabelled rows' shift-test
+    # scores (at the source prior) averaged over the fold models, against the labelled rows'
+    # class means re-weighted so each fold holds its share of every class, computed here in
+    # NumPy and handed to moment_prior_interval.
+    X, y = load_wine(return_X_y=True)
+    order = np.random.default_rng(5).permutation(y.shape[0])
+    lab, new = order[:120], order[120:]
+    model = _fit_adapt(PriorShiftWrapper(_model(), cv=3, random_state=2),
+                       X[lab], y[lab], X[new])
+    est = model.prior_estimator_
+    fold, fold_raw = _direct_folds(_model(), X[lab], y[lab], X[new], seed=2)
+    np.testing.assert_array_equal(est._src_fold, fold)
+    src = est.source_prior_
+    share = np.bincount(fold, minlength=3) / 120.0
+    scores = [est.calibrate(f) / src for f in fold_raw]
+    u_bar = sum(s * (q[:, 1:] - q[:, :1]) for s, q in zip(share, scores, strict=True))
+    m_t = u_bar.mean(axis=0)
+    c_t = np.cov(u_bar.T, bias=True)
+    p_s, y_s, _ = est._source_rows()
+    q_s = est.calibrate(p_s) / src
+    u_s = q_s[:, 1:] - q_s[:, :1]
+    means, covs, n_c = [], [], []
+    for c in range(3):
+        rows = y_s == c
+        w = np.array([share[fold[i]] * rows.sum() / np.sum(rows & (fold == fold[i]))
+                      for i in np.flatnonzero(rows)])
+        wn = w / w.sum()
+        mean = wn @ u_s[rows]
+        means.append(mean)
+        covs.append(((u_s[rows] - mean) * wn[:, None]).T @ (u_s[rows] - mean))
+        n_c.append(w.sum() ** 2 / np.dot(w, w))
+    bounds = moment_prior_interval((m_t, c_t, 58.0), (np.array(means), np.array(covs),
+                                                      np.array(n_c)), 0.95)[0]
+    ml = model.prior_estimate_.ml_prior
+    np.testing.assert_allclose(model.prior_estimate_.ml_interval,
+                               _widen(bounds, ml, ml, 58.0, 0.95), atol=1e-10)
