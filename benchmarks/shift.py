@@ -1,6 +1,6 @@
 """Prior shift: does adapting help, does it do no harm, are the intervals honest, is it fast?
 
-Seven parts, each printing its targets beside the measured values.
+Eight parts, each printing its targets beside the measured values.
 
 1. **Evidence** (weak and strong models, 2-50 % prevalence, shifts x0.5, x1, x2). One-feature
    Gaussian classes (unit variance, means 0 and ``delta``): a weak model (``delta = 0.74``, AUC
@@ -52,7 +52,7 @@ Run: ``nice python benchmarks/shift.py`` (about 45 minutes on two shared cores; 
 coverage grid is most of it) or
 ``--quick`` (about a minute; fewer repetitions, so coverage is only indicative);
 ``--only=evidence`` (or ``coverage``, ``speed``, ``small``, ``multiclass``, ``tiny``,
-``fewlabels``) runs one part;
+``fewlabels``, ``refit``) runs one part;
 ``--seed=N`` draws the evidence part's data from another seed (default 0), to check a rule on
 draws it was not chosen on. ``--ceiling`` (about twice the evidence part's time) runs the
 evidence part on the draws of seed N and N + 1 and then prints the design-aware bound (12 bins,
@@ -97,6 +97,20 @@ seeds' draws (mean share closed; worst no-shift ratio).
    without a row of some class (a fit needs every class) are drawn again and counted. Then the
    BCa bootstrap (``n_resamples=200``, 200 repetitions; about 5 minutes) beside the default in
    four shifted cells with 2,000 unlabelled rows. Target: within 2 points of nominal.
+8. **A base model refit on the labelled rows** (``--only=refit``): the wrapper fits its base
+   model itself (standardised logistic regression inside Platt scaling, ``cv=3`` both, the
+   stack of docs/prior_shift.md) on n labelled rows drawn at random from a bundled data set;
+   the unlabelled rows are resampled by class from the other rows at a known prevalence.
+   Coverage at 90 % and 95 % and mean 95 % width of ``target_prior_interval_`` with the
+   unlabelled rows also scored by the cross-fitting's fold models ("after", the default since
+   4 December 2026) and, on the same fits and rows, without them ("before": the fold models
+   hidden, which is the earlier interval); and, for reference, a base model fitted on as many
+   other rows and frozen (the labelled rows then fit only the calibration and the source
+   shares; its interval is the same before and after; on as many rows as labelled, at most a
+   quarter of the set). Sets: scikit-learn digits "is an 8" (300 and 600
+   labelled rows), breast cancer "malignant" (200), statsmodels' ``fair`` "any affair" (300)
+   and, three classes, digits 3 / 5 / 8 (300). ``--reps=N`` (default 200; about 6 minutes on
+   two shared cores). Target: within 2 points of nominal.
 """
 
 from __future__ import annotations
@@ -858,10 +872,14 @@ def speed() -> None:
     with_interval = PriorShiftWrapper(model, random_state=0).fit(X, y)
     point_only = PriorShiftWrapper(model, n_resamples=0, random_state=0).fit(X, y)
     bca = PriorShiftWrapper(model, interval="bca", random_state=0).fit(X, y)
+    # the base model refit on the labelled rows (5 folds): the default interval also scores
+    # the unlabelled rows with each fold model
+    refit = PriorShiftWrapper(LogisticRegression(), random_state=0).fit(X, y)
     t_sk = best(lambda: lr.predict_proba(X_new))
     t_point = best(lambda: point_only.adapt(X_new))
     t_default = best(lambda: with_interval.adapt(X_new))
     t_bca = best(lambda: bca.adapt(X_new), repeat=3)
+    t_refit = best(lambda: refit.adapt(X_new))
     print("3. Speed: adapt on 10,000 unlabelled rows after fit on 2,000 labelled rows (median)")
     print(f"   scikit-learn LogisticRegression.predict_proba  {t_sk * 1e3:8.2f} ms")
     print(f"   adapt, point estimate only                    {t_point * 1e3:8.2f} ms "
@@ -870,6 +888,9 @@ def speed() -> None:
           f"({t_default / t_sk:.0f}x predict_proba)  target <= 1000 ms -> "
           f"{'met' if t_default <= 1.0 else 'MISSED'}")
     print(f"   adapt, BCa bootstrap, 200 resamples           {t_bca * 1e3:8.2f} ms")
+    print(f"   adapt, default interval, base model refit     {t_refit * 1e3:8.2f} ms "
+          f"(5 fold models also score the rows)  target <= 1000 ms -> "
+          f"{'met' if t_refit <= 1.0 else 'MISSED'}")
 
 
 # -- 5. multiclass interval ------------------------------------------------------------------
@@ -1324,10 +1345,112 @@ def few_labels(quick: bool, reps: int | None = None) -> None:
     print()
 
 
+def _refit_sets():
+    """(name, X, y, labelled rows, unlabelled rows, target shares) of the refit part."""
+    from sklearn.datasets import load_digits
+
+    digits = load_digits()
+    eight = (digits.target == 8).astype(int)
+    cancer = load_breast_cancer()
+    yield "digits 8", digits.data, eight, 300, 400, np.array([0.8, 0.2])
+    yield "digits 8", digits.data, eight, 600, 400, np.array([0.8, 0.2])
+    yield "cancer", cancer.data, (cancer.target == 0).astype(int), 200, 200, np.array([0.8, 0.2])
+    try:
+        import statsmodels.api as sm
+    except ImportError:  # pragma: no cover - statsmodels is in the test extra
+        print("   (statsmodels not installed: its fair data skipped)")
+    else:
+        d = sm.datasets.fair.load_pandas().data
+        yield ("fair", d.drop(columns="affairs").to_numpy(float),
+               (d["affairs"] > 0).to_numpy(int), 300, 1000, np.array([0.8, 0.2]))
+    three = np.isin(digits.target, (3, 5, 8))
+    y3 = np.searchsorted([3, 5, 8], digits.target[three])
+    yield "digits 3/5/8", digits.data[three], y3, 300, 400, np.array([0.5, 0.3, 0.2])
+
+
+def refit_coverage(quick: bool, reps: int | None = None) -> None:
+    """Coverage of target_prior_interval_ with a base model refit on the labelled rows,
+    with and without the fold models' scores of the unlabelled rows, on the same draws."""
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    from probwrap import CalibrationWrapper
+
+    reps = int(reps) if reps else (40 if quick else 200)
+    print(f"8. A base model refit on the labelled rows: coverage of target_prior_interval_ "
+          f"(worst share), {reps} repetitions per cell; 'before': the unlabelled rows scored "
+          "by the refit model only; 'after': also by each fold model (default)")
+    head = (f"{'data':>13} {'n_lab':>6} {'n_unl':>6} | {'before90':>8} {'before95':>8} "
+            f"{'width95':>8} | {'after90':>8} {'after95':>8} {'width95':>8} | {'frozen90':>8} "
+            f"{'frozen95':>8} {'width95':>8}")
+    print(head)
+    print("-" * len(head))
+    t0 = time.perf_counter()
+    for name, X, y, n_lab, n_unl, target in _refit_sets():
+        k = target.shape[0]
+        rng = np.random.default_rng(8)
+        hits = {key: [] for key in ("b90", "b95", "a90", "a95", "f90", "f95")}
+        widths = {"b": [], "a": [], "f": []}
+        done = 0
+        while done < reps:
+            seed = int(rng.integers(2**31 - 1))
+            order = rng.permutation(y.shape[0])
+            # labelled rows; as many other rows to fit the frozen reference model; the rest the
+            # pool the unlabelled rows are drawn from
+            n_other = min(n_lab, y.shape[0] // 4)
+            lab, other = order[:n_lab], order[n_lab:n_lab + n_other]
+            pool = order[n_lab + n_other:]
+            if (np.unique(y[lab]).shape[0] < k or np.bincount(y[lab]).min() < 6
+                    or np.unique(y[other]).shape[0] < k):
+                continue  # every class needs rows in every fold
+            cls = rng.choice(k, size=n_unl, p=target)
+            rows = np.empty(n_unl, dtype=int)
+            for c in range(k):
+                members = pool[y[pool] == c]
+                rows[cls == c] = rng.choice(members, size=int(np.sum(cls == c)))
+            truth = target  # the population's shares (rows drawn at them)
+            base = make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000))
+            model = PriorShiftWrapper(CalibrationWrapper(base, method="platt", cv=3,
+                                                         random_state=seed),
+                                      cv=3, random_state=seed)
+            frozen = PriorShiftWrapper(FrozenEstimator(CalibrationWrapper(
+                make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000)),
+                method="platt", cv=3, random_state=seed).fit(X[other], y[other])),
+                random_state=seed)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                model.fit(X[lab], y[lab])
+                frozen.fit(X[lab], y[lab])
+                folds = model._fold_models
+                # before: the fold models hidden (the earlier interval); after: as fitted
+                for tag, wrapper, kept in (("b", model, None), ("a", model, folds),
+                                           ("f", frozen, None)):
+                    wrapper._fold_models = kept
+                    for level in (0.90, 0.95):
+                        wrapper.confidence_level = level
+                        wrapper.prior_estimator_.confidence_level = level
+                        wrapper.adapt(X[rows])
+                        lo, hi = wrapper.target_prior_interval_.T
+                        shares = [1] if k == 2 else list(range(k))
+                        hit = (lo <= truth) & (truth <= hi)
+                        hits[f"{tag}{round(level * 100)}"].append(hit[shares])
+                        if level == 0.95:
+                            widths[tag].append(float(np.mean((hi - lo)[shares])))
+            done += 1
+        cov = {key: np.asarray(v).mean(axis=0).min() for key, v in hits.items()}
+        print(f"{name:>13} {n_lab:6d} {n_unl:6d} | {cov['b90']:8.1%} {cov['b95']:8.1%} "
+              f"{np.mean(widths['b']):8.4f} | {cov['a90']:8.1%} {cov['a95']:8.1%} "
+              f"{np.mean(widths['a']):8.4f} | {cov['f90']:8.1%} {cov['f95']:8.1%} "
+              f"{np.mean(widths['f']):8.4f}", flush=True)
+    print(f"({time.perf_counter() - t0:.0f} s; binomial sd of a coverage over {reps} "
+          f"repetitions: {np.sqrt(0.9 * 0.1 / reps):.1%} at 90 %, "
+          f"{np.sqrt(0.95 * 0.05 / reps):.1%} at 95 %)\n")
+
+
 def main(quick: bool = False,
          seed: int = 0,
          parts: tuple[str, ...] = ("evidence", "coverage", "speed", "small", "multiclass", "tiny",
-                                   "fewlabels"),
+                                   "fewlabels", "refit"),
          reps: int | None = None, grid_only: bool = False,
          ) -> None:
     import os
@@ -1350,6 +1473,8 @@ def main(quick: bool = False,
         tiny_labelled(quick)
     if "fewlabels" in parts:
         few_labels(quick, reps)
+    if "refit" in parts:
+        refit_coverage(quick, reps)
     print(f"\n(total {time.perf_counter() - t0:.0f} s)")
 
 
@@ -1361,5 +1486,5 @@ if __name__ == "__main__":
     reps_arg = [int(a[len("--reps="):]) for a in sys.argv if a.startswith("--reps=")]
     main(quick="--quick" in sys.argv, seed=seeds[0] if seeds else 0,
          parts=chosen or ("evidence", "coverage", "speed", "small", "multiclass", "tiny",
-                          "fewlabels"),
+                          "fewlabels", "refit"),
          reps=reps_arg[0] if reps_arg else None, grid_only="--grid-only" in sys.argv)
