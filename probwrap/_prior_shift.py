@@ -228,7 +228,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     shift_pvalue_ : float
         p-value of the two-sample score test of "no shift" (the ``adapt`` rows against the
         labelled rows, whose class shares and calibration are themselves estimates; F
-        reference when the rows are few; :func:`probwrap.shift.shift_score_test`).
+        reference when the rows are few; :func:`probwrap.shift.shift_score_test`). With a base
+        model refit here, the ``adapt`` rows' side is their score averaged over the fold models,
+        like the interval's (since 4 December 2026; docs/prior_shift.md, "A base model refit on
+        the labelled rows").
     shift_statistic_ : float
         Its statistic on the chi-square scale (chi-square with ``n_classes - 1`` degrees of
         freedom under no shift, at any number of labelled rows: the chi-square quantile at
@@ -440,12 +443,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
             est._condense_source(check_resolution(self.tally_resolution), SUMMARY_BINS)
             est._drop_source_for_analytic()
-        # whether the base model was refit here; its fold models are kept only where the
-        # default interval will read them (labelled rows kept, interval="score", EM for more
-        # than two classes), so the fitted wrapper does not carry K unused copies of the model
+        # whether the base model was refit here; its fold models are kept only where adapt
+        # will read them (labelled rows kept as rows), so the fitted wrapper does not carry K
+        # unused copies of the model
         self._refit_here = est._src_fold is not None
-        if (getattr(est, "_src_fold", None) is None or self.interval != "score"
-                or (self.classes_.shape[0] > 2 and self.method != "em")):
+        if est._src_fold is None:
             self._fold_models = None
         return self._finish_fit(est)
 
@@ -581,7 +583,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         interval asked for cannot read the fold models (a bootstrap interval, unlabelled Dask
         or Spark rows, a multiclass method other than EM): it then leaves out how much the
         refit moves with the labelled draw."""
-        if (folds is not None or not getattr(self, "_refit_here", False)
+        carried = folds is not None and self.interval == "score" and (
+            self.classes_.shape[0] == 2 or self.method == "em")
+        if (carried or not getattr(self, "_refit_here", False)
                 or getattr(self.prior_estimator_, "_src_fold", None) is None
                 or self.prior_estimator_.n_resamples == 0):
             return
@@ -599,15 +603,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
     def _fold_proba(self, X: Any) -> list[np.ndarray] | None:
         """``X`` scored by each fold model of the cross-fitting, in ``classes_`` columns, when
-        the base model was refit here and the default interval will read them (None
-        otherwise): the interval then compares the unlabelled rows' scores averaged over the
-        fold models with the labelled rows' held-out scores from the same models, so it carries
-        how much a refit moves with the labelled draw (see :func:`probwrap.shift.score_interval`).
+        the base model was refit here and the labelled rows are kept (None otherwise): the
+        shift test and the default interval then compare the unlabelled rows' scores averaged
+        over the fold models with the labelled rows' held-out scores from the same models, so
+        they carry how much a refit moves with the labelled draw (see
+        :func:`probwrap.shift.score_interval`).
         """
         models = getattr(self, "_fold_models", None)
-        est = self.prior_estimator_
-        if (not models or getattr(est, "_src_fold", None) is None or self.interval != "score"
-                or est.n_resamples == 0 or (self.classes_.shape[0] > 2 and self.method != "em")):
+        if not models or getattr(self.prior_estimator_, "_src_fold", None) is None:
             return None
         from ._heldout import fold_columns
 

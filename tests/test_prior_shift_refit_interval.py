@@ -205,15 +205,36 @@ def test_bootstrap_interval_with_a_refit_model_warns(cancer_split):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         model.fit(X, y)
-    assert model._fold_proba(X_new) is None
     with pytest.warns(UserWarning, match="does not carry how much that refit moves"):
         model.adapt(X_new)
+    # the shift test reads the fold models whatever the interval
+    score = _fit_adapt(PriorShiftWrapper(_model(), cv=3, random_state=0), X, y, X_new)
+    assert model.shift_statistic_ == score.shift_statistic_
     frozen = PriorShiftWrapper(FrozenEstimator(model.estimator_), interval="bca",
                                n_resamples=30, random_state=0)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         frozen.fit(X, y).adapt(X_new)
     assert not [w for w in caught if "refit" in str(w.message)]
+
+
+def test_shift_test_compares_fold_averaged_scores(cancer_split):
+    # the shift test's unlabelled side is the fold-averaged score at the source prior: the
+    # statistic is the one of PriorEstimator.estimate given the fold models' posteriors
+    # (rebuilt outside the wrapper), and another one without them
+    X, y, X_new = cancer_split
+    model = _fit_adapt(PriorShiftWrapper(_model(), cv=3, random_state=0), X, y, X_new)
+    est = model.prior_estimator_
+    _, fold_raw = _direct_folds(_model(), X, y, X_new, seed=0)
+    proba = model.estimator_.predict_proba(X_new)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        with_folds = est.estimate(proba, fold_proba=list(fold_raw), interval=False)
+        without = est.estimate(proba, interval=False)
+    assert model.shift_statistic_ == pytest.approx(with_folds.shift_statistic, rel=1e-12)
+    assert abs(with_folds.shift_statistic - without.shift_statistic) > 1e-3
+    # the point estimate reads the refit model's posteriors only
+    np.testing.assert_array_equal(with_folds.prior, without.prior)
 
 
 def test_multiclass_refit_interval_is_the_fold_averaged_moment_interval():

@@ -484,11 +484,13 @@ class PriorEstimator(_Resampling):
             Whether to compute the bootstrap interval (when ``n_resamples > 0``).
         fold_proba : sequence of array-like of shape (n, k), default=None
             The same rows' posteriors from each fold model, in fold order, for an estimator
-            fitted with ``source_fold``: the score interval (default) then compares the
-            unlabelled rows' scores averaged over the fold models with the labelled rows'
-            held-out scores of the same models (:func:`score_interval`), so it carries the
-            difference between the fold models and a model refit on all labelled rows that
-            scored ``proba``. Ignored for other intervals and without ``source_fold``.
+            fitted with ``source_fold``: the shift test and the score interval (default) then
+            compare the unlabelled rows' scores averaged over the fold models with the labelled
+            rows' held-out scores of the same models (:func:`score_interval`), so they carry
+            the difference between the fold models and a model refit on all labelled rows that
+            scored ``proba`` (the point estimate still reads ``proba``). Ignored without
+            ``source_fold`` or once the labelled rows are kept as a tally; the bootstrap
+            intervals do not read it.
 
         Returns
         -------
@@ -535,7 +537,17 @@ class PriorEstimator(_Resampling):
             ml = _solve_prior(p, wk, src, point.prior if np.all(point.prior > 0) else src,
                               float(self.tol), int(self.max_iter))[0]
             self._warn_boundary(ml, p, wk, n_eff)
-        m_t, c_t, _ = _mean_cov(_score_rows(p, src), w)
+        refit = self._refit_folds(fold_proba, p_raw.shape[0])
+        u_t = _score_rows(p, src)
+        if refit is not None:
+            # a model refit on the labelled rows: the unlabelled rows' scores averaged over the
+            # fold models (weights: the folds' shares of the labelled rows), so they mix the
+            # same models as the labelled rows' held-out scores (see score_interval); for the
+            # shift test and the multiclass interval alike
+            kept = self._source_rows()
+            share = fold_shares(refit[1], kept[1], kept[2], refit[0].shape[0])[0]
+            u_t = np.tensordot(share, np.stack([_score_rows(f, src) for f in refit[0]]), axes=1)
+        m_t, c_t, _ = _mean_cov(u_t, w)
         source_score = getattr(self, "_source_score", None)
         test = _score_stat_moments((m_t, c_t, n_eff), _current_source_score(source_score), k,
                                     pooled=True, source_prior=src)
@@ -556,7 +568,6 @@ class PriorEstimator(_Resampling):
             if not point.identified:
                 bounds = np.column_stack([np.zeros(k), np.ones(k)])
             elif getattr(self, "interval", "score") == "score" and k == 2 and source is not None:
-                refit = self._refit_folds(fold_proba, p_raw.shape[0])
                 (lo, hi), consistent = score_interval(
                     p, self.calibrate(source[0]), source[1], src, sample_weight=w,
                     source_sample_weight=source[2], effective_rows=n_eff,
@@ -585,19 +596,15 @@ class PriorEstimator(_Resampling):
                 # more than two classes: the labelled rows' class-conditional mean scores
                 # re-weighted to the shares (moment_prior_interval); the delta method on EM's
                 # fixed point missed under real shifts where the calibration errs on new rows
-                refit = self._refit_folds(fold_proba, p_raw.shape[0])
-                target, moments = (m_t, c_t, n_eff), self._class_score_moments()
+                moments = self._class_score_moments()
                 if refit is not None:
-                    # the unlabelled rows' scores averaged over the fold models, against the
-                    # labelled rows re-weighted so each fold holds its share of every class
-                    # (as score_interval does for two classes)
-                    share, w_fold = fold_shares(refit[1], source[1], source[2], refit[0].shape[0])
-                    u_bar = np.tensordot(share, np.stack([_score_rows(f, src) for f in refit[0]]),
-                                         axes=1)
-                    target = (*_mean_cov(u_bar, w)[:2], n_eff)
+                    # (m_t, c_t: the fold-averaged scores, above) against the labelled rows
+                    # re-weighted so each fold holds its share of every class (as
+                    # score_interval does for two classes)
+                    w_fold = fold_shares(refit[1], source[1], source[2], refit[0].shape[0])[1]
                     moments = class_score_moments(class_score_sums(
                         self.calibrate(source[0]), source[1], w_fold, src))
-                found = moment_prior_interval(target, moments, self.confidence_level)
+                found = moment_prior_interval((m_t, c_t, n_eff), moments, self.confidence_level)
                 bounds = (np.column_stack([np.zeros(k), np.ones(k)]) if found is None
                           else found[0])
                 ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
