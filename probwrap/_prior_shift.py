@@ -16,6 +16,7 @@ from ._heldout import (
     _multiclass_dask,
     check_fitted,
     rescale_extreme_weights,
+    row_count,
 )
 from ._prior_shift_tallied import _tally_rows, tallied_adapt, tallied_monitor
 from ._validation import check_sample_weight, plain
@@ -498,6 +499,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
     # -- adaptation ------------------------------------------------------------------------------
     def _check_features(self, X: Any, what: str) -> None:
+        if not _is_dask(X) and row_count(X) == 0:
+            # the base model would refuse it in its own words (a scaler's "0 sample(s)"), and a
+            # prior of no rows is not defined: say which call and what it needs
+            raise ValueError(
+                f"`X` {what} has no rows; it needs at least one unlabelled row (fewer than 30 "
+                "make the estimate very uncertain)."
+            )
         shape = getattr(X, "shape", None)
         n_in = getattr(self, "n_features_in_", None)
         if n_in is not None and shape is not None and len(shape) == 2 and shape[1] != n_in:
