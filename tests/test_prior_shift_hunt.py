@@ -1,4 +1,5 @@
-"""Findings of the eighteenth session's prior-shift hunt (docs/small_data.md): no unlabelled rows.
+"""Findings of the eighteenth session's prior-shift hunt (docs/small_data.md): no unlabelled rows,
+and labelled rows passed more than once.
 
 Data: scikit-learn's bundled breast cancer set and statsmodels' bundled fair set; the
 reference for the honest held-out accuracy is scikit-learn's own cross-validation.
@@ -8,14 +9,19 @@ from __future__ import annotations
 
 import warnings
 
+import numpy as np
 import pytest
+import statsmodels.api as sm
 from sklearn.datasets import load_breast_cancer
 from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
+from sklearn.model_selection import KFold, cross_val_score
+from sklearn.neighbors import KNeighborsClassifier
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from probwrap import PriorShiftWrapper
+from probwrap import CalibrationWrapper, PriorShiftWrapper
+from probwrap._heldout import feature_cells
 
 
 @pytest.fixture(scope="module")
@@ -45,3 +51,53 @@ def test_no_unlabelled_rows_is_a_clear_error(cancer, call):
     with pytest.raises(ValueError, match="`X` passed to adapt has no rows"):
         frozen.adapt(X[:0])
     frozen.adapt(X[200:201])  # one row is allowed (with its own warnings)
+
+
+def test_copies_found_but_not_shared_common_values(cancer):
+    X, y = cancer
+    cells = feature_cells(np.tile(X[:100], (3, 1)), None, np.tile(y[:100], 3))
+    assert cells is not None and np.unique(cells).shape[0] == 100
+    assert np.all(np.bincount(cells) == 3)
+    assert np.array_equal(cells[:100], cells[100:200])
+    assert feature_cells(X, None, y) is None  # every row distinct
+    # statsmodels' fair: 6,366 rows of eight multiple-choice or rounded answers, many rows
+    # with identical answers, none of them carrying a value no other row has: no copies
+    d = sm.datasets.fair.load_pandas().data
+    Xf = d.drop(columns="affairs")
+    yf = (d["affairs"] > 0).to_numpy(int)
+    assert np.unique(Xf.to_numpy(), axis=0).shape[0] < Xf.shape[0]  # shared answers exist
+    assert feature_cells(Xf.to_numpy(float), None, yf) is None
+    assert feature_cells(Xf, None, yf) is None
+    # a DataFrame of copies is found like the array
+    import pandas as pd
+
+    from probwrap._heldout import copied_row_cells
+
+    frame = pd.DataFrame(np.tile(X[:20], (2, 1)))
+    found = copied_row_cells(frame, np.tile(np.arange(20), 2))
+    assert found is not None and np.unique(found).shape[0] == 20
+
+
+def test_copies_stay_in_one_fold_so_held_out_rows_are_held_out(cancer):
+    # 1-nearest-neighbour on 100 labelled rows passed three times: with the copies in other
+    # folds every held-out row's nearest training row is its own copy (held-out accuracy 1.0
+    # before the fix); kept together, the held-out accuracy is the honest one, which
+    # scikit-learn's cross-validation of the 100 distinct rows measures
+    X, y = cancer
+    Xl, yl = X[:100], y[:100]
+    model = make_pipeline(StandardScaler(), KNeighborsClassifier(n_neighbors=1))
+    wrapper = PriorShiftWrapper(model, random_state=0).fit(np.tile(Xl, (3, 1)), np.tile(yl, 3))
+    held_out = wrapper.prior_estimator_._src[0]
+    accuracy = np.mean(held_out.argmax(axis=1) == np.tile(yl, 3))
+    reference = cross_val_score(model, Xl, yl, cv=KFold(5, shuffle=True, random_state=0)).mean()
+    assert accuracy < 0.97
+    assert abs(accuracy - reference) < 0.05
+
+
+def test_copies_parted_by_given_folds_warn(cancer):
+    X, y = cancer
+    Xt, yt = np.tile(X[:60], (2, 1)), np.tile(y[:60], 2)
+    folds = list(KFold(3, shuffle=True, random_state=0).split(Xt))
+    with pytest.warns(UserWarning, match="put copies of a row apart"):
+        CalibrationWrapper(make_pipeline(StandardScaler(), LogisticRegression()),
+                           method="platt", cv=folds).fit(Xt, yt)
