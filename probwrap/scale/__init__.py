@@ -50,6 +50,20 @@ def add_predictions(model, frame, *, prefix: str = ""):
         ``adjusted_probability`` (``adjusted_probability_<class>``; prior-shift wrappers only)
         and ``action`` (``predict``).
 
+    Raises
+    ------
+    ValueError
+        At the call, from the frame's schema: a feature column of the model is missing, the
+        columns do not match ``n_features_in_``, or a feature column holds no single value per
+        row (an array, map, struct, bytes or a Spark ML vector).
+    pyspark.errors.PySparkException
+        When Spark evaluates the frame (``collect``, ``write``, ...), for a batch of rows the
+        model cannot score or whose probabilities are NaN, infinite or outside [0, 1]: one
+        message starting "probwrap add_predictions: <model> could not score a batch of <n>
+        rows", then the model's own error (PySpark 4: ``SparkRuntimeException``
+        ``[USER_RAISED_EXCEPTION]``; PySpark 3.5: a ``PythonException`` with a one-frame
+        traceback).
+
     Examples
     --------
     >>> from probwrap.scale import add_predictions

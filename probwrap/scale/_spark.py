@@ -168,7 +168,71 @@ def _column(frame: Any, value: Any, what: str, *, required: bool = False) -> str
             f"`{what}`={value!r} is not a column of the Spark DataFrame; its columns are "
             f"{frame.columns}."
         )
+    kind = _type_name(frame, value)
+    if what in _NUMBER_ROLES and kind not in _NUMBER_TYPES:
+        raise ValueError(
+            f"`{what}`={value!r} is a column of Spark type {kind}; {_NUMBER_ROLES[what]} must be "
+            f"numbers. Cast it first, for example frame.withColumn({value!r}, "
+            f"F.col({value!r}).cast('double'))."
+        )
+    if what not in _NUMBER_ROLES and kind in _NOT_SCALAR:
+        raise ValueError(
+            f"`{what}`={value!r} is a column of Spark type {kind}, which holds no single value "
+            "per row; name a column of numbers, text or booleans."
+        )
     return value
+
+
+#: Spark type names (``DataType.typeName()``) of numbers; a weight, count or score column must
+#: have one of them (checked on the driver, from the schema, before any job).
+_NUMBER_TYPES = frozenset(
+    {"byte", "short", "integer", "long", "float", "double", "decimal"}
+)
+
+#: Spark types whose values reach pandas as objects that no scikit-learn model reads as one
+#: feature (lists, dicts, rows, bytes, vectors of Spark ML, a column without values).
+_NOT_SCALAR = frozenset({"array", "map", "struct", "binary", "void", "udt"})
+
+#: Arguments naming a column that must hold numbers, and what the message calls them.
+_NUMBER_ROLES = {
+    "sample_weight": "row weights",
+    "successes": "counts of successes",
+    "trials": "counts of trials",
+}
+
+
+def _type_name(frame: Any, column: str) -> str:
+    """The Spark type of ``frame[column]`` as ``DataType.typeName()`` ("double", "string",
+    "array", ...; "udt" for user-defined types such as Spark ML's vectors), from the schema."""
+    from pyspark.sql.types import UserDefinedType
+
+    data_type = frame.schema[column].dataType
+    if isinstance(data_type, UserDefinedType):
+        return "udt"
+    return data_type.typeName()
+
+
+def _check_feature_types(frame: Any, columns: list) -> None:
+    """Refuse, on the driver before any job, feature columns whose Spark type no scikit-learn
+    model can read (a Spark ML vector, an array, a map, a struct, bytes, a column of nulls):
+    on the executors they would fail inside the model, row batch by row batch."""
+    bad = [(c, _type_name(frame, c)) for c in columns]
+    bad = [(c, k) for c, k in bad if k in _NOT_SCALAR]
+    if not bad:
+        return
+    listed = ", ".join(f"{c!r} ({'vector or other user-defined type' if k == 'udt' else k})"
+                       for c, k in bad[:5])
+    raise ValueError(
+        f"The model's feature column(s) {listed} of the Spark DataFrame hold no single number per "
+        "row; the model needs one column per feature. Expand them into columns first (a Spark "
+        "ML vector: pyspark.ml.functions.vector_to_array, then one column per element)."
+    )
+
+
+def _text_columns(frame: Any, columns: list) -> list:
+    """Feature columns that reach the model as text (Spark strings): a model converts them to
+    numbers only when every value is a number, so a failure names them."""
+    return [c for c in columns if _type_name(frame, c) in ("string", "varchar", "char")]
 
 
 def _feature_columns(estimator: Any, frame: Any, exclude: list) -> tuple[list, bool]:
@@ -188,6 +252,7 @@ def _feature_columns(estimator: Any, frame: Any, exclude: list) -> tuple[list, b
                 f"Column {clash[0]!r} is named as labels, weights or batches but is also one of "
                 "the estimator's features."
             )
+        _check_feature_types(frame, names)
         return names, True
     cols = [c for c in frame.columns if c not in exclude]
     n_in = getattr(estimator, "n_features_in_", None)
@@ -199,6 +264,7 @@ def _feature_columns(estimator: Any, frame: Any, exclude: list) -> tuple[list, b
         )
     if not cols:
         raise ValueError("The Spark DataFrame has no feature columns besides the named ones.")
+    _check_feature_types(frame, cols)
     return cols, False
 
 
@@ -306,6 +372,13 @@ def _score_column(frame: Any, named: list, what: str) -> str:
             f"A Spark DataFrame given as `{what}` must hold exactly one column besides the named "
             f"label / weight columns: the scores. It has {rest}; select the score column and the "
             "named columns first, for example frame.select('log_odds', 'damaged')."
+        )
+    kind = _type_name(frame, rest[0])
+    if kind not in _NUMBER_TYPES:
+        raise ValueError(
+            f"The score column {rest[0]!r} of the Spark DataFrame given as `{what}` is of Spark "
+            f"type {kind}; scores must be numbers. Cast it first, for example "
+            f"frame.withColumn({rest[0]!r}, F.col({rest[0]!r}).cast('double'))."
         )
     return rest[0]
 
@@ -739,6 +812,20 @@ def add_predictions(model: Any, frame: Any, *, prefix: str = "") -> Any:
           ``applied_prior_`` (its ``predict_proba``);
         * ``action``: ``predict`` (the action of a cost policy, otherwise the class).
 
+    Raises
+    ------
+    ValueError
+        At the call, from the frame's schema: a feature column of the model is missing, the
+        columns do not match ``n_features_in_``, or a feature column holds no single value per
+        row (an array, map, struct, bytes or a Spark ML vector).
+    pyspark.errors.PySparkException
+        When Spark evaluates the frame (``collect``, ``write``, ...), for a batch of rows the
+        model cannot score or whose probabilities are NaN, infinite or outside [0, 1]: one
+        message starting "probwrap add_predictions: <model> could not score a batch of <n>
+        rows", then the model's own error (PySpark 4: ``SparkRuntimeException``
+        ``[USER_RAISED_EXCEPTION]``; PySpark 3.5: a ``PythonException`` with a one-frame
+        traceback).
+
     Examples
     --------
     >>> from probwrap.scale import add_predictions
@@ -789,17 +876,23 @@ def add_predictions(model: Any, frame: Any, *, prefix: str = "") -> Any:
     if adjusted:
         fields += [T.StructField(n, T.DoubleType()) for n in names["adjusted_probability"]]
     fields.append(T.StructField(names["action"][0], action_type))
-    schema = T.StructType(fields)
+    # a batch the model cannot score gives its rows this message instead of values; every added
+    # column then raises it from the JVM (Spark's raise_error) when the row is evaluated
+    schema = T.StructType([*fields, T.StructField(_SCORING_ERROR, T.StringType())])
     shared = _broadcast(frame, model)
+    text = _text_columns(frame, features)
+    who = type(model).__name__
+    jvm_raise = _raises_user_errors()
 
     def put(out: dict, key: str, p: np.ndarray) -> None:
+        _check_scored(p, who, key)
         if binary:
             out[names[key][0]] = p[:, 1]
         else:
             for j, name in enumerate(names[key]):
                 out[name] = p[:, j]
 
-    def score(rows: pd.DataFrame) -> pd.DataFrame:
+    def compute(rows: pd.DataFrame) -> dict:
         fitted = shared.value
         X = rows if named else rows.to_numpy()
         if named:
@@ -812,13 +905,84 @@ def add_predictions(model: Any, frame: Any, *, prefix: str = "") -> Any:
         else:
             put(out, "probability", np.asarray(fitted.predict_proba(X), dtype=float))
         out[names["action"][0]] = _python_value(T, action_type, np.asarray(fitted.predict(X)))
-        return pd.DataFrame(out)
+        out[_SCORING_ERROR] = None
+        return out
+
+    def score(rows: pd.DataFrame) -> pd.DataFrame:
+        try:
+            return pd.DataFrame(compute(rows))
+        except Exception as exc:  # noqa: BLE001 - every failure reaches the user as one message
+            message = _scoring_message(exc, len(rows), who, text)
+            if not jvm_raise:  # PySpark 3: the worker's traceback, but only this frame of it
+                raise ValueError(message) from None
+            out = {f.name: pd.Series([None] * len(rows), dtype=object) for f in fields}
+            out[_SCORING_ERROR] = [message] * len(rows)
+            return pd.DataFrame(out)
 
     score.__annotations__ = {"rows": pd.DataFrame, "return": pd.DataFrame}
     udf = F.pandas_udf(score, schema)
     tmp = "__probwrap_scored__"
     scored = frame.withColumn(tmp, udf(F.struct(*[F.col(c) for c in features])))
+    failed = F.col(tmp).getField(_SCORING_ERROR)
     return scored.select(
         *[F.col(c) for c in frame.columns],
-        *[F.col(tmp).getField(f.name).alias(f.name) for f in fields],
+        *[
+            F.when(failed.isNotNull(), F.raise_error(failed))
+            .otherwise(F.col(tmp).getField(f.name))
+            .alias(f.name)
+            for f in fields
+        ],
     )
+
+
+#: The field of the scoring UDF's result that carries a failed batch's message.
+_SCORING_ERROR = "__probwrap_error__"
+
+
+def _raises_user_errors() -> bool:
+    """Whether Spark's ``raise_error`` reaches the Python driver as the message alone (PySpark 4:
+    a ``SparkRuntimeException`` "[USER_RAISED_EXCEPTION] <message>"). PySpark 3.5 gives a plain
+    Java ``RuntimeException`` that reaches Python as a Py4J error around the JVM stack trace, so
+    there the scoring function raises the message itself (a ``PythonException`` whose Python
+    traceback is one frame long)."""
+    import pyspark
+
+    try:
+        return int(pyspark.__version__.split(".")[0]) >= 4
+    except ValueError:  # pragma: no cover - a development build without a plain version
+        return True
+
+
+def _check_scored(p: np.ndarray, who: str, key: str) -> None:
+    """Refuse NaN / infinite probabilities and probabilities outside [0, 1] on the rows scored by
+    :func:`add_predictions` (any model: a wrapper refuses them itself, a plain model may not)."""
+    from .._predictions import check_model_probabilities
+
+    bad = ~np.isfinite(p).all(axis=1) if p.ndim == 2 else ~np.isfinite(p)
+    if bad.any():
+        raise ValueError(
+            f"{who} returned NaN or infinite {key.replace('_', ' ')} for {int(bad.sum())} of "
+            f"{p.shape[0]} rows; probabilities must be finite numbers in [0, 1]."
+        )
+    check_model_probabilities(p, "predict_proba", who, f"{p.shape[0]} rows")
+
+
+def _scoring_message(exc: BaseException, n_rows: int, who: str, text: list) -> str:
+    """The one message a user sees when a batch of :func:`add_predictions` cannot be scored: a
+    first line naming probwrap, the step, the batch and the model's own error, then the rest of
+    that error; no executor traceback (Spark raises it with ``raise_error``)."""
+    part = _partition_id()
+    detail = str(exc).strip() or type(exc).__name__
+    if not isinstance(exc, ValueError):
+        detail = f"{type(exc).__name__}: {detail}"
+    message = (
+        f"probwrap add_predictions: {who} could not score a batch of {n_rows} rows "
+        f"(Spark partition {part}): {detail}"
+    )
+    if text:
+        message += (
+            f"\n(The feature column(s) {text[:5]} are text in the Spark DataFrame; the model reads "
+            "them as numbers only when every value is one: cast them, for example "
+            f"F.col({text[0]!r}).cast('double').)"
+        )
+    return message
