@@ -13,10 +13,11 @@ given. :func:`add_predictions` scores a Spark DataFrame with a fitted wrapper.
 
 from .._validation import plain
 from ._build import tally_scores
-from ._tally import DEFAULT_RESOLUTION, ScoreTally, merge_tallies
+from ._tally import DEFAULT_RESOLUTION, BinnedFitWarning, ScoreTally, merge_tallies
 
 __all__ = [
     "DEFAULT_RESOLUTION",
+    "BinnedFitWarning",
     "ScoreTally",
     "add_predictions",
     "merge_tallies",

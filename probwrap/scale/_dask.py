@@ -345,6 +345,7 @@ def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, respo
         values, y_index, w = kept
         from_tally = False
     else:
+        _warn_binned_rows(type(owner).__name__, tally, stacklevel=7)
         scores, y_index, w = tally.to_rows()
         values = scores if response == "decision_function" else np.column_stack(
             [_expit(-scores), _expit(scores)]
@@ -368,6 +369,23 @@ def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, respo
         from_tally=from_tally,
         weighted_class_rows=tally.weighted_rows_by_label,
     )
+
+
+def _warn_binned_rows(owner: str, tally: ScoreTally, *, stacklevel: int) -> None:
+    """The :class:`~probwrap.scale.BinnedFitWarning` of a model's tally of at most KEPT_ROWS rows
+    that came without its rows (on Spark: rows that changed between the tally and the second
+    pass collecting them; see probwrap.scale._spark._tally_partitions)."""
+    from ._tally import kept_rows_limit, warn_binned_small_set
+
+    if 0 < tally.n_rows <= kept_rows_limit():
+        warn_binned_small_set(
+            owner, tally.n_rows, tally.resolution,
+            "the rows did not reach the client beside the tally (on Spark: the frame's rows "
+            "changed between the two passes over them, or its partitions could not send them)",
+            "fit a deterministic frame (cache() or checkpoint() it first), or collect the rows "
+            "(frame.toPandas(), or compute() a Dask collection) and fit in memory",
+            stacklevel=stacklevel + 1,
+        )
 
 
 def kept_rows_of(tally: ScoreTally) -> tuple | None:

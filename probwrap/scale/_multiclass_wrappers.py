@@ -268,6 +268,23 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     merged = rows.map_reduce(_ovr_tallies_block, owner, owner_resolution(owner))
     if merged[0].total_weight <= 0:
         raise ValueError(ZERO_WEIGHT)
+    if 0 < merged[0].n_rows <= kept_rows_limit():
+        # a small set reaches this path only when no first pass brought its rows (above)
+        from ._tally import warn_binned_small_set
+
+        collect = ("collect the rows (frame.toPandas(), or compute() a Dask collection) and "
+                   "fit in memory")
+        if owner.clip is not None:
+            reason, remedy = "`clip` was given", "leave `clip` at None, or " + collect
+        elif owner.response_ != "predict_proba":
+            reason, remedy = (
+                "the model's decision_function values are calibrated (the rows come to the "
+                "client only with predict_proba and clip=None)", collect)
+        else:
+            reason, remedy = ("the rows did not reach the client (on Spark: the frame's rows "
+                              "changed between passes)", "cache() the frame first, or " + collect)
+        warn_binned_small_set(type(owner).__name__, merged[0].n_rows, merged[0].resolution,
+                              reason, remedy, stacklevel=6)
     # class j's tally has the rows of class j as its label 1
     weighted = np.array([t.weighted_rows_by_label[1] for t in merged])
     check_class_rows(owner, classes, np.array([t.rows_by_label[1] for t in merged]), weighted)

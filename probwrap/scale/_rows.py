@@ -201,5 +201,8 @@ def unlabelled_proba_from_rows(
         # a small set: the rows' own probabilities, as in memory (no tally: ``None``)
         proba, _, w = kept
         return proba, (None if tally.kept_rows[2] is None else w), None
+    from ._dask import _warn_binned_rows
+
+    _warn_binned_rows(owner, tally, stacklevel=5)
     proba, w = tally.to_scores(proba=True)
     return proba, w, tally

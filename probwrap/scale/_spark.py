@@ -126,9 +126,11 @@ def _loaded(blob: Any) -> Any:
 def _kept_rows_share(frame: Any) -> int:
     """Rows a partition may send to the driver beside its result (a small set's rows, see
     probwrap.scale._tally.KEPT_ROWS): the limit divided by the number of partitions, so the
-    driver never collects more than the limit however many partitions there are (a set of few
-    rows spread very unevenly over many partitions is fitted from its tally). 0 where the
-    number of partitions is unknown (Spark Connect)."""
+    driver never collects more than the limit however many partitions there are in a first
+    pass. 0 where the number of partitions is unknown (Spark Connect). A small set whose rows a
+    partition left out (spread very unevenly, or on Spark Connect) is passed over a second time
+    with the whole limit once the total is known to be small (``_tally_partitions``,
+    ``SparkRows.map_reduce``)."""
     from ._tally import kept_rows_limit
 
     try:
@@ -301,60 +303,78 @@ def _tally_partitions(
     """
     import pandas as pd
 
+    from ._tally import kept_rows_limit
+
     shared = _broadcast(frame, payload)
     labelled_cols = n_labels
-    share = _kept_rows_share(frame)
 
-    def tally_partition(batches):
-        from pyspark import TaskContext
+    def run(share: int) -> tuple[ScoreTally, bool]:
+        """The merged tally, and whether a partition left out its kept rows (more than
+        ``share`` of them)."""
 
-        context = TaskContext.get()
-        part = context.partitionId() if context is not None else 0
-        value = shared.value
-        total = None
-        held: list = []
-        n_held = 0
-        chunk = 0
+        def tally_partition(batches):
+            from pyspark import TaskContext
 
-        def flush():
-            s = np.concatenate([h[0] for h in held])
-            y = None if held[0][1] is None else np.concatenate([h[1] for h in held])
-            w = None if held[0][2] is None else np.concatenate([h[2] for h in held])
-            # the model's own outputs (tallies of a model: _convert_model), kept for small sets
-            out = None if len(held[0]) < 4 else np.concatenate([h[3] for h in held])
-            return _tally_block(
-                s, y, w, labelled_cols, resolution, n_replicates, [seed, stream, part, chunk],
-                out,
-            )
+            context = TaskContext.get()
+            part = context.partitionId() if context is not None else 0
+            value = shared.value
+            total = None
+            held: list = []
+            n_held = 0
+            chunk = 0
 
-        try:
-            for pdf in batches:
-                if len(pdf) == 0:
-                    continue
-                held.append(convert(pdf, value))
-                n_held += len(pdf)
-                if n_held >= CHUNK_ROWS:
+            def flush():
+                s = np.concatenate([h[0] for h in held])
+                y = None if held[0][1] is None else np.concatenate([h[1] for h in held])
+                w = None if held[0][2] is None else np.concatenate([h[2] for h in held])
+                # the model's own outputs (tallies of a model: _convert_model), kept for small sets
+                out = None if len(held[0]) < 4 else np.concatenate([h[3] for h in held])
+                return _tally_block(
+                    s, y, w, labelled_cols, resolution, n_replicates, [seed, stream, part, chunk],
+                    out,
+                )
+
+            try:
+                for pdf in batches:
+                    if len(pdf) == 0:
+                        continue
+                    held.append(convert(pdf, value))
+                    n_held += len(pdf)
+                    if n_held >= CHUNK_ROWS:
+                        t = flush()
+                        total = t if total is None else total.merge(t)
+                        held, n_held, chunk = [], 0, chunk + 1
+                if held:
                     t = flush()
                     total = t if total is None else total.merge(t)
-                    held, n_held, chunk = [], 0, chunk + 1
-            if held:
-                t = flush()
-                total = t if total is None else total.merge(t)
-        except ValueError as exc:  # raised on the driver (see _WorkerError)
-            yield pd.DataFrame({"partition": [part], "tally": [_failure(exc)]})
-            return
-        if total is not None:
-            if total.kept_rows is not None and total.n_rows > share:
-                total.kept_rows = None  # the driver collects at most KEPT_ROWS rows in all
-            yield pd.DataFrame({"partition": [part], "tally": [pickle.dumps(total)]})
+            except ValueError as exc:  # raised on the driver (see _WorkerError)
+                yield pd.DataFrame({"partition": [part], "tally": [_failure(exc)],
+                                    "dropped": [False]})
+                return
+            if total is not None:
+                dropped = total.kept_rows is not None and total.n_rows > share
+                if dropped:
+                    total.kept_rows = None  # the driver collects at most KEPT_ROWS rows in all
+                yield pd.DataFrame({"partition": [part], "tally": [pickle.dumps(total)],
+                                    "dropped": [dropped]})
 
-    rows = frame.select(*columns).mapInPandas(
-        tally_partition, "partition int, tally binary"
-    ).collect()
-    if not rows:
-        raise ValueError("The Spark DataFrame has no rows; a tally needs at least one row.")
-    rows = sorted(rows, key=lambda r: r["partition"])
-    return merge_tallies([_loaded(r["tally"]) for r in rows])
+        rows = frame.select(*columns).mapInPandas(
+            tally_partition, "partition int, tally binary, dropped boolean"
+        ).collect()
+        if not rows:
+            raise ValueError("The Spark DataFrame has no rows; a tally needs at least one row.")
+        rows = sorted(rows, key=lambda r: r["partition"])
+        return merge_tallies([_loaded(r["tally"]) for r in rows]), any(r["dropped"] for r in rows)
+
+    limit = kept_rows_limit()
+    share = _kept_rows_share(frame)
+    tally, dropped = run(share)
+    if dropped and tally.n_rows <= limit and share < limit:
+        # a small set whose rows sat unevenly in many partitions (or on Spark Connect, where the
+        # number of partitions is unknown): with the total now known to be small, a second pass
+        # sends every partition's rows, so the fit is that of the rows, as in memory
+        tally, _ = run(limit)
+    return tally
 
 
 def _convert_scores(pdf: Any, spec: tuple) -> tuple:
@@ -584,11 +604,25 @@ class SparkRows:
         self._split = (features, named, label, weight)
 
     def map_reduce(self, fn: Any, *args: Any) -> Any:
+        from ._tally import kept_rows_limit
+
+        limit = kept_rows_limit()
+        share = _kept_rows_share(self._frame)
+        out, dropped = self._map_reduce(share, fn, args)
+        if dropped and getattr(out, "n", limit + 1) <= limit and share < limit:
+            # a small set's rows left out by partitions holding more than their share (rows
+            # spread unevenly, or Spark Connect): the total is now known to be small, so a
+            # second pass sends them all (see _tally_partitions)
+            out, _ = self._map_reduce(limit, fn, args)
+        return out
+
+    def _map_reduce(self, share: int, fn: Any, args: tuple) -> tuple[Any, bool]:
+        """The combined result, and whether a partition left out its rows (more than
+        ``share``; results with ``without_rows_beyond`` only)."""
         import pandas as pd
 
         shared = _broadcast(self._frame, (fn, args))
         spec = self._split
-        share = _kept_rows_share(self._frame)
 
         def map_partition(batches):
             f, a = shared.value
@@ -598,19 +632,25 @@ class SparkRows:
                     r = f(*a, *_split(*spec, pdf))
                     total = r if total is None else _combine(total, r)
             except ValueError as exc:  # raised on the driver (see _WorkerError)
-                yield pd.DataFrame({"partition": [_partition_id()], "value": [_failure(exc)]})
+                yield pd.DataFrame({"partition": [_partition_id()], "value": [_failure(exc)],
+                                    "dropped": [False]})
                 return
+            dropped = False
             if hasattr(total, "without_rows_beyond"):
                 # a small set's rows (multiclass first pass): at most KEPT_ROWS reach the driver
-                total = total.without_rows_beyond(share)
+                capped = total.without_rows_beyond(share)
+                dropped = capped.arrays is None and total.arrays is not None
+                total = capped
             if total is not None:
-                yield pd.DataFrame({"partition": [_partition_id()], "value": [pickle.dumps(total)]})
+                yield pd.DataFrame({"partition": [_partition_id()],
+                                    "value": [pickle.dumps(total)], "dropped": [dropped]})
 
-        return _gather(
+        rows = (
             self._frame.select(*self._columns)
-            .mapInPandas(map_partition, "partition int, value binary")
+            .mapInPandas(map_partition, "partition int, value binary, dropped boolean")
             .collect()
         )
+        return _gather(rows), any(r["dropped"] for r in rows)
 
     def persist(self, make: Any, *args: Any) -> SparkBlocks:
         import pandas as pd

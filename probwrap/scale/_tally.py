@@ -27,7 +27,15 @@ from scipy.special import expit
 from .._validation import check_same_length, check_scores, plain
 from ..calibration._base import weight_unit_of
 
-__all__ = ["DEFAULT_RESOLUTION", "ScoreTally", "merge_tallies", "warn_weight_unit", "weight_unit_of"]
+__all__ = [
+    "DEFAULT_RESOLUTION",
+    "BinnedFitWarning",
+    "ScoreTally",
+    "merge_tallies",
+    "warn_binned_small_set",
+    "warn_weight_unit",
+    "weight_unit_of",
+]
 
 #: Default bin width on the log-odds scale. Replacing every score by its bin's mean changes the
 #: log loss of a fitted Platt, beta or temperature map by far less than 1e-4 at this width (the
@@ -55,6 +63,30 @@ def kept_rows_limit() -> int:
     """:data:`KEPT_ROWS`, read when called (the driver-side decisions use it, so that a test can
     lower it to exercise the tally path on few rows)."""
     return KEPT_ROWS
+
+
+class BinnedFitWarning(UserWarning):
+    """A wrapper fitted a small Dask or Spark set (at most :data:`KEPT_ROWS` rows) from the
+    bins of its score tally instead of from its rows, so the result may differ from the
+    in-memory fit of the same rows (see :func:`warn_binned_small_set`)."""
+
+
+def warn_binned_small_set(owner: str, n_rows: int, resolution: float, reason: str, remedy: str,
+                          *, stacklevel: int = 3) -> None:
+    """The :class:`BinnedFitWarning` of a set of ``n_rows`` <= :data:`KEPT_ROWS` rows fitted
+    from its tally: ``reason`` says why the rows were not used, ``remedy`` how to get the fit
+    of the rows."""
+    warnings.warn(
+        f"{owner}: the {n_rows} held-out rows were fitted from their score tally (bins of "
+        f"{resolution:g} on the log-odds scale), not from the rows themselves as a set of at "
+        f"most {KEPT_ROWS:,} rows is fitted in memory, because {reason}. Within a bin the rows' "
+        "labels and weights are pooled, so the fit can differ from the in-memory fit of the "
+        "same rows (isotonic steps and a tuned cutoff move to bin edges; the small-set "
+        "safeguards that need rows, such as the recalibrated anchor of a tuned cutoff and "
+        f"method='auto' by cross-validation, do not apply). For the exact fit: {remedy}.",
+        BinnedFitWarning,
+        stacklevel=stacklevel,
+    )
 
 def _exponent(unit: float) -> int:
     return math.frexp(unit)[1] - 1
