@@ -216,3 +216,57 @@ def test_multiclass_auto_is_still_refused_beyond_the_kept_rows(wine):
     X, y, _, model, _ = wine
     with pytest.raises(ValueError, match="method='auto' is not supported for multiclass Dask"):
         CalibrationWrapper(model, method="auto", clip=1e-6).fit(_dask(X), _dask(y))
+
+
+def test_dask_monitor_warns_once_per_condition_naming_the_batches(cancer):
+    # each block's estimate warned on its own ("Only 20 effective unlabelled rows", ten times
+    # for five blocks of 20 rows); now one warning for the table, naming the batches, under the
+    # synchronous and the threaded scheduler
+    X, y, X_new, nb, _, _ = cancer
+    shift = PriorShiftWrapper(nb, n_resamples=0).fit(X, y)
+    rows = X_new[:200]
+    for scheduler in ("synchronous", "threads"):
+        with dask.config.set(scheduler=scheduler), warnings.catch_warnings(record=True) as rec:
+            warnings.simplefilter("always")
+            table = shift.monitor(da.from_array(rows, chunks=((20,) * 5 + (100,), 30)))
+        ours = [r for r in rec if issubclass(r.category, UserWarning)
+                and "Only" in str(r.message)]
+        assert len(ours) == 1
+        assert str(ours[0].message).startswith(
+            "PriorShiftWrapper.monitor: 5 of 6 batches (batch 0, 1, 2, 3, 4) warned alike; "
+            "first, batch 0: Only 20 effective unlabelled rows")
+        assert ours[0].filename == __file__
+        assert table["n_rows"].tolist() == [20] * 5 + [100]
+
+
+def test_dask_small_multiclass_set_fitted_from_tallies_warns():
+    # `clip` given: no first pass brings the rows, so 89 rows of wine are fitted from
+    # one-vs-rest tallies, now with a BinnedFitWarning; with clip=None the in-memory fit
+    from probwrap.scale import BinnedFitWarning
+
+    X, y = load_wine(return_X_y=True)
+    nb = FrozenEstimator(GaussianNB().fit(X[::2], y[::2]))
+    Xd, yd = da.from_array(X[1::2], chunks=(30, 13)), da.from_array(y[1::2], chunks=30)
+    with pytest.warns(BinnedFitWarning, match="the 89 held-out rows were fitted from their "
+                                              "score tally"):
+        CalibrationWrapper(nb, method="platt", clip=1e-6).fit(Xd, yd)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", BinnedFitWarning)
+        exact = CalibrationWrapper(nb, method="platt").fit(Xd, yd)
+    mem = CalibrationWrapper(nb, method="platt").fit(X[1::2], y[1::2])
+    np.testing.assert_allclose(exact.predict_proba(X), mem.predict_proba(X), rtol=0, atol=1e-12)
+
+
+def test_a_small_tally_without_its_rows_warns(cancer):
+    # the safety net: a tally of at most KEPT_ROWS rows that arrives without them (on Spark,
+    # rows that changed between passes) is fitted from its bins with a BinnedFitWarning
+    from probwrap.scale import BinnedFitWarning
+    from probwrap.scale._dask import heldout_rows_from_tally
+
+    X, y, _, nb, _, _ = cancer
+    tally = _tally_block(np.clip(nb.predict_log_proba(X) @ [-1.0, 1.0], -30, 30), y, None, 2,
+                         1e-3)  # the log-odds, without the outputs: no kept rows
+    assert tally.kept_rows is None
+    with pytest.warns(BinnedFitWarning, match="the 60 held-out rows were fitted from their score"):
+        held = heldout_rows_from_tally(CalibrationWrapper(nb), nb, tally, "predict_proba")
+    assert held.from_tally

@@ -7,6 +7,7 @@ only those tallies are merged, as a tree, and brought back to the client.
 
 from __future__ import annotations
 
+import threading
 import warnings
 from typing import Any
 
@@ -438,11 +439,56 @@ def _monitor_block(owner, est, source, seed, Xb, wb):
     return monitor_proba(est, source, seed, proba, check_sample_weight(wb, proba.shape[0]))
 
 
+#: One batch's estimate at a time per process records its warnings (``warnings.catch_warnings``
+#: swaps module-wide state, which two threads of a Dask worker must not do at once).
+_RECORDING = threading.Lock()
+
+
 def monitor_proba(est, source, seed, proba, w):
     """One row of a monitor table from a batch's probabilities and weights (Dask or Spark),
-    and the power of two the batch's weights were divided by (1.0 unless they lie beyond about
+    the power of two the batch's weights were divided by (1.0 unless they lie beyond about
     1e+-77, whose sums of squares would overflow or underflow; a batch's estimate does not
-    depend on the scale of its weights)."""
+    depend on the scale of its weights), and the warnings of the estimate as
+    ``[(category, message), ...]``: the client raises them once per condition for the whole
+    table (:func:`warn_monitor_batches`), not once per batch on whichever worker ran it."""
+    with _RECORDING, warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        row, unit = _monitor_row(est, source, seed, proba, w)
+    return row, unit, [(c.category, str(c.message)) for c in caught]
+
+
+def _condition(category: type, message: str) -> tuple:
+    """What makes two batches' warnings "the same condition": the category and the message with
+    its numbers masked (a batch's counts, estimates and intervals)."""
+    import re
+
+    return category, re.sub(r"\d+(?:\.\d+)?(?:e[-+]?\d+)?", "#", message)
+
+
+def warn_monitor_batches(per_batch: list, n_batches: int, *, stacklevel: int = 5) -> None:
+    """The warnings of a Dask or Spark ``monitor``'s batch estimates, one per condition for the
+    whole table, as ``prior_by_batch`` gives one ``PriorIntervalConflictWarning`` per call:
+    how many batches warned alike, which ones (the first five), and the first one's message.
+
+    ``per_batch``: ``[(batch label, [(category, message), ...]), ...]`` in table order.
+    """
+    groups: dict = {}
+    for label, caught in per_batch:
+        for category, message in caught:
+            entry = groups.setdefault(_condition(category, message), (category, message, []))
+            if not entry[2] or entry[2][-1] != label:
+                entry[2].append(label)
+    for category, message, labels in groups.values():
+        names = ", ".join(str(b) for b in labels[:5]) + (", ..." if len(labels) > 5 else "")
+        warnings.warn(
+            f"PriorShiftWrapper.monitor: {len(labels)} of {n_batches} batches (batch {names}) "
+            f"warned alike; first, batch {labels[0]}: {message}",
+            category,
+            stacklevel=stacklevel,
+        )
+
+
+def _monitor_row(est, source, seed, proba, w):
     from ._bootstrap import tally_prior_interval
     from ._tally import weight_unit_of
 
@@ -531,9 +577,10 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
     if not kept:
         raise ValueError("`X` has no rows; monitor needs at least one row.")
     table = np.zeros(len(kept), dtype=dtype)
-    for j, (i, (r, _)) in enumerate(kept):
+    for j, (i, (r, _, _)) in enumerate(kept):
         table[j] = (i, *r)
-    warn_monitor_units([u for _, (_, u) in kept])
+    warn_monitor_units([u for _, (_, u, _) in kept])
+    warn_monitor_batches([(i, caught) for i, (_, _, caught) in kept], len(kept))
     return table
 
 

@@ -740,6 +740,9 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         T.StructField("class_shift_score", T.ArrayType(T.DoubleType())),
         T.StructField("weight_unit", T.DoubleType()),
         T.StructField("error", T.StringType()),
+        # the batch's warnings (raised on the driver once per condition: warn_monitor_batches)
+        T.StructField("warning_category", T.ArrayType(T.StringType())),
+        T.StructField("warning_message", T.ArrayType(T.StringType())),
     ])
 
     def estimate_batch(pdf):
@@ -754,7 +757,7 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
                 "lower": [[]],
                 "upper": [[]], "shift_statistic": [np.nan], "shift_pvalue": [np.nan],
                 "converged": [False], "class_shift_score": [[]], "weight_unit": [1.0],
-                "error": [str(exc)],
+                "error": [str(exc)], "warning_category": [[]], "warning_message": [[]],
             })
 
     def estimate(pdf, key):
@@ -770,7 +773,7 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
             proba.shape[0],
         )
         order = np.lexsort((w, *proba.T[::-1]))  # by class-0 probability, ..., then weight
-        row, unit = monitor_proba(prior_est, src, seed_of[key], proba[order], w[order])
+        row, unit, caught = monitor_proba(prior_est, src, seed_of[key], proba[order], w[order])
         n, n_eff, prior, lower, upper, stat, pvalue, conv, by_class = row
         return pd.DataFrame({
             "batch": [key], "n_rows": [int(n)], "n_effective": [float(n_eff)],
@@ -780,6 +783,8 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
             "shift_pvalue": [float(pvalue) if pvalue is not None else np.nan],
             "converged": [bool(conv)], "class_shift_score": [list(map(float, by_class))],
             "weight_unit": [float(unit)], "error": [None],
+            "warning_category": [[f"{c.__module__}:{c.__qualname__}" for c, _ in caught]],
+            "warning_message": [[m for _, m in caught]],
         })
 
     rows = X.select(*features, *named_cols).groupBy(batch_col).applyInPandas(
@@ -810,10 +815,31 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         table[i] = (lab, r["n_rows"], r["n_effective"], r["prior"], r["lower"], r["upper"],
                     r["shift_statistic"], r["shift_pvalue"], r["converged"],
                     r["class_shift_score"])
-    from ._dask import warn_monitor_units
+    from ._dask import warn_monitor_batches, warn_monitor_units
 
     warn_monitor_units([r["weight_unit"] for r in rows])
+    warn_monitor_batches(
+        [(lab, [(_warning_category(c), m) for c, m in zip(
+            by_label[lab]["warning_category"] or [], by_label[lab]["warning_message"] or [],
+            strict=True)]) for lab in labels],
+        len(labels),
+    )
     return table
+
+
+def _warning_category(name: str) -> type:
+    """The warning class named ``module:qualname`` on an executor (UserWarning if it cannot be
+    imported on the driver)."""
+    import importlib
+
+    module, _, qualname = name.partition(":")
+    try:
+        obj: Any = importlib.import_module(module)
+        for part in qualname.split("."):
+            obj = getattr(obj, part)
+    except (ImportError, AttributeError):
+        return UserWarning
+    return obj if isinstance(obj, type) and issubclass(obj, Warning) else UserWarning
 
 
 # -- scoring a Spark DataFrame -------------------------------------------------------------------
