@@ -73,23 +73,28 @@ def _stretched(inner):
 
 
 def _first_line(exc: BaseException) -> str:
+    """The line of probwrap's message (PySpark 4: the first; 3.5: after the traceback)."""
     text = str(exc)
-    return text.removeprefix("[USER_RAISED_EXCEPTION] ").splitlines()[0]
+    return text[text.index("probwrap add_predictions:"):].splitlines()[0]
 
 
 def _raises_short(frame_fn):
     """Collect the frame; return the exception, checking it is one message, not a traceback."""
     import pyspark
-    from pyspark.errors import PySparkException
+    from pyspark.errors import PySparkException, PythonException
 
     with pytest.raises(PySparkException) as info:
         frame_fn().collect()
+    text = str(info.value)
     if int(pyspark.__version__.split(".")[0]) >= 4:
-        # Spark's raise_error: the message alone, no Python or Java traceback
-        assert "Traceback" not in str(info.value)
-        assert info.value.getCondition() == "USER_RAISED_EXCEPTION"
+        # Spark's raise_error: the message alone, first, with no Python or Java traceback
+        assert not isinstance(info.value, PythonException)
+        assert "Traceback" not in text and "\tat org.apache" not in text
+        assert text.splitlines()[0].removeprefix("[USER_RAISED_EXCEPTION] ").startswith(
+            "probwrap add_predictions:")
     else:  # PySpark 3.5: the worker's traceback, one frame long
-        assert str(info.value).count('  File "') == 1
+        assert isinstance(info.value, PythonException)
+        assert text.count('  File "') == 1
     return info.value
 
 
