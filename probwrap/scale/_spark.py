@@ -1007,10 +1007,10 @@ _SCORING_ERROR = "__probwrap_error__"
 
 def _raises_user_errors() -> bool:
     """Whether Spark's ``raise_error`` reaches the Python driver as the message alone (PySpark 4:
-    a ``SparkRuntimeException`` "[USER_RAISED_EXCEPTION] <message>"). Before Spark 4,
-    ``raise_error`` throws a plain Java ``RuntimeException`` without an error condition, so
-    there the scoring function raises the message itself (a ``PythonException`` whose Python
-    traceback is one frame long)."""
+    a ``SparkRuntimeException`` "[USER_RAISED_EXCEPTION] <message>"). With PySpark 3.5 it
+    reaches Python as a ``Py4JJavaError`` holding the whole Java stack trace, so there the
+    scoring function raises the message itself (a ``PythonException`` whose Python traceback is
+    one frame long)."""
     import pyspark
 
     try:
