@@ -100,6 +100,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                 for column in set(exact) & set(frame.columns):
                     frame[column] = frame[column].str.replace(",", ".", regex=False)
             header = _csv_header(path, encoding, sep)
+            if header is not None and len(header) == 1:
+                frame = _blank_lines_as_missing(pd, frame, path, encoding, sep)
     except DataError:
         raise
     except pd.errors.EmptyDataError:
@@ -159,6 +161,35 @@ def _read_csv(pd: Any, path: Path, **options: Any) -> Any:
     except (pd.errors.ParserWarning, pd.errors.ParserError):
         _check_field_counts(path, options.get("sep", ","), options.get("encoding", "utf-8-sig"))
         raise
+
+
+def _blank_lines_as_missing(pd: Any, frame: Any, path: Path, encoding: str, sep: str) -> Any:
+    """A one-column CSV file with its blank lines between rows put back as missing values.
+
+    pandas skips blank lines, which is right where a row of several fields cannot be blank,
+    but in a one-column file a blank line is how a missing value is written: skipping it
+    silently would drop the row (and ``calibrate apply`` would write fewer rows than it read,
+    out of line with the input). Blank lines before the header and after the last row are
+    still ignored.
+    """
+    import csv
+
+    try:
+        with open(path, encoding=encoding, newline="") as handle:
+            blank = [not any(field.strip() for field in record)
+                     for record in csv.reader(handle, delimiter=sep)]
+    except (OSError, UnicodeError, csv.Error):
+        return frame
+    filled = [i for i, b in enumerate(blank) if not b]
+    if len(filled) < 2:
+        return frame
+    blank = blank[filled[0] + 1:filled[-1] + 1]  # the lines between the header and last row
+    if not any(blank) or len(blank) - sum(blank) != frame.shape[0]:
+        return frame  # nothing skipped, or lines that do not map one to one onto rows
+    position = np.flatnonzero(~np.asarray(blank, dtype=bool))
+    out = frame.set_axis(position, axis=0).reindex(range(len(blank)))
+    out.attrs = dict(frame.attrs)
+    return out
 
 
 def _check_field_counts(path: Path, sep: str, encoding: str) -> None:
