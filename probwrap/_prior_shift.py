@@ -549,7 +549,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # the workers (one pass per EM iteration); with the analytic interval (EM).
             from .scale._entry import estimate_multiclass_target
 
-            res = estimate_multiclass_target(est, self.estimator_, X, sample_weight, rs)
+            scorer = self._fold_scorer()
+            res = estimate_multiclass_target(est, self.estimator_, X, sample_weight, rs,
+                                             folds=scorer)
+            # (the fold models scored the rows where they live whenever there are any)
+            self._warn_refit_left_out(None if scorer is None else True)
             return self._finish_adapt(res, res.interval)
         if _is_dask(X) or _is_dask(sample_weight):
             # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is
@@ -558,9 +562,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # alongside.
             from .scale._entry import owner_resolution, unlabelled_proba_from_dask
 
-            proba, sample_weight, target = unlabelled_proba_from_dask(
+            # a refit base model: the fold models score a small set's rows where they live (a
+            # larger set comes back as a tally of the refit model's score, without them)
+            proba, sample_weight, target, folds = unlabelled_proba_from_dask(
                 self.estimator_, X, sample_weight, n_replicates=est.n_resamples,
-                random_state=rs, resolution=owner_resolution(self),
+                random_state=rs, resolution=owner_resolution(self), folds=self._fold_scorer(),
             )
         else:
             proba = self._inner_output(X, "predict_proba")
@@ -570,10 +576,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 sample_weight = rescale_extreme_weights(
                     check_sample_weight(sample_weight, proba.shape[0]), "PriorShiftWrapper.adapt"
                 )
+            folds = self._fold_proba(X)
         poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
             self.interval == "score" and not multiclass
         )
-        folds = None if target is not None else self._fold_proba(X)
         self._warn_refit_left_out(folds)
         if poisson:
             # Some rows are tallied: one Poisson bootstrap over tallied and in-memory rows alike.
@@ -603,8 +609,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             "carry how much that refit moves with the draw of the labelled rows; with a "
             "high-variance model on a few hundred rows it can cover several points less than "
             "its level (docs/prior_shift.md, 'A base model refit on the labelled rows'). The "
-            "default interval (interval='score', in-memory rows; method='em' with more than "
-            "two classes) carries it; or fit the base model elsewhere and pass it frozen.",
+            "default interval (interval='score'; method='em' with more than two classes) "
+            "carries it, on in-memory rows and on Dask or Spark rows except more than 20,000 "
+            "rows of two classes (those are reduced to a tally of the refit model's score, "
+            "which the fold models' scores of each row cannot join); or fit the base model "
+            "elsewhere and pass it frozen.",
             UserWarning,
             stacklevel=3,
         )
@@ -624,6 +633,19 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
         return [fold_columns(np.asarray(classes), np.asarray(model.predict_proba(X), dtype=float),
                              self.classes_, "predict_proba") for model, classes in models]
+
+    def _fold_scorer(self) -> Any:
+        """The refit model and its fold models, to score Dask or Spark rows where they live
+        (sent there once), when :meth:`_fold_proba` would read them; None otherwise."""
+        models = getattr(self, "_fold_models", None)
+        if not models or getattr(self.prior_estimator_, "_src_fold", None) is None:
+            return None
+        from .scale._entry import fold_scorer
+
+        # each fold model's classes as columns of classes_ (as fold_columns places them)
+        return fold_scorer(self.estimator_, [
+            (model, [int(np.flatnonzero(self.classes_ == c)[0]) for c in np.asarray(classes)])
+            for model, classes in models], self.classes_.shape[0])
 
     def _finish_adapt(self, res: Any, interval: Any) -> PriorShiftWrapper:
         self.prior_estimate_ = res

@@ -63,6 +63,7 @@ XDIST_GROUPS = {
     "tests/test_spark_multiclass.py::": "spark",
     "tests/test_spark_small_sets.py::": "spark",
     "tests/test_spark_user_messages.py::": "spark",
+    "tests/test_spark_refit.py::": "spark",
 }
 
 

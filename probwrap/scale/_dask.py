@@ -428,15 +428,21 @@ def dask_predict(method: Any, X: Any, n_columns: int | None, dtype: Any = float)
 
 
 # -- PriorShiftWrapper.monitor on Dask input: one batch per block --------------------------------
-def _monitor_block(owner, est, source, seed, Xb, wb):
-    """Prior estimate of one block on the worker that holds it (a block fits in memory)."""
+def _monitor_block(shared, seed, Xb, wb):
+    """Prior estimate of one block on the worker that holds it (a block fits in memory).
+
+    ``shared``: ``(model, prior estimator, labelled tally or None, fold scorer or None)``, one
+    object of the task graph that every block's task reads (sent to each worker once)."""
     from .._validation import check_sample_weight
     from ._blocks import n_block_rows, predict_block
 
+    estimator, est, source, folds = shared
     if n_block_rows(Xb) == 0:  # an empty partition: no batch (left out, with a warning)
         return None
-    proba = predict_block(owner.estimator_, "predict_proba", Xb, len(owner.classes_))
-    return monitor_proba(est, source, seed, proba, check_sample_weight(wb, proba.shape[0]))
+    proba = predict_block(estimator, "predict_proba", Xb, est.n_classes_)
+    fold_proba = None if folds is None else list(folds.fold_proba(Xb))
+    return monitor_proba(est, source, seed, proba, check_sample_weight(wb, proba.shape[0]),
+                         fold_proba)
 
 
 #: One batch's estimate at a time per process records its warnings (``warnings.catch_warnings``
@@ -444,16 +450,18 @@ def _monitor_block(owner, est, source, seed, Xb, wb):
 _RECORDING = threading.Lock()
 
 
-def monitor_proba(est, source, seed, proba, w):
+def monitor_proba(est, source, seed, proba, w, fold_proba=None):
     """One row of a monitor table from a batch's probabilities and weights (Dask or Spark),
     the power of two the batch's weights were divided by (1.0 unless they lie beyond about
     1e+-77, whose sums of squares would overflow or underflow; a batch's estimate does not
     depend on the scale of its weights), and the warnings of the estimate as
     ``[(category, message), ...]``: the client raises them once per condition for the whole
-    table (:func:`warn_monitor_batches`), not once per batch on whichever worker ran it."""
+    table (:func:`warn_monitor_batches`), not once per batch on whichever worker ran it.
+    ``fold_proba``: the batch's posteriors from each fold model of a base model refit on the
+    labelled rows (read as in memory, ``prior_by_batch(fold_proba=...)``)."""
     with _RECORDING, warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        row, unit = _monitor_row(est, source, seed, proba, w)
+        row, unit = _monitor_row(est, source, seed, proba, w, fold_proba)
     return row, unit, [(c.category, str(c.message)) for c in caught]
 
 
@@ -488,7 +496,7 @@ def warn_monitor_batches(per_batch: list, n_batches: int, *, stacklevel: int = 5
         )
 
 
-def _monitor_row(est, source, seed, proba, w):
+def _monitor_row(est, source, seed, proba, w, fold_proba=None):
     from ._bootstrap import tally_prior_interval
     from ._tally import weight_unit_of
 
@@ -497,7 +505,7 @@ def _monitor_row(est, source, seed, proba, w):
         w = w / unit
 
     if source is None or source.n_replicates == 0 or est.n_resamples == 0:
-        res = est.estimate(proba, w, random_state=seed)
+        res = est.estimate(proba, w, random_state=seed, fold_proba=fold_proba)
         interval = res.interval
     else:
         import copy
@@ -548,10 +556,15 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
     rng = check_random_state(est.random_state)
     seeds = [rng.randint(2**31 - 1) for _ in blocks]
     source = getattr(owner, "_source_tally", None)
-    call = dask.delayed(_monitor_block, pure=True)
-    rows = dask.compute(
-        *[call(owner, est, source, s, b, wb) for s, b, wb in zip(seeds, blocks, ws, strict=True)]
+    # the models and the estimator as one object of the graph: sent to each worker once, not
+    # with every block's task (a refit base model brings its fold models along)
+    shared = dask.delayed(
+        (owner.estimator_, est, source, owner._fold_scorer()),
+        pure=True, traverse=False,
     )
+    call = dask.delayed(_monitor_block, pure=True)
+    rows = dask.compute(*[call(shared, s, b, wb) for s, b, wb in zip(seeds, blocks, ws,
+                                                                      strict=True)])
     k = est.n_classes_
     dtype = [
         ("batch", np.int64),

@@ -27,6 +27,7 @@ __all__ = [
     "dask_predict",
     "estimate_multiclass_target",
     "first_block_row_costs",
+    "fold_scorer",
     "fit_multiclass_calibration",
     "fit_multiclass_source",
     "heldout_cost_dask",
@@ -53,8 +54,17 @@ def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: 
 
 
 def unlabelled_proba_from_dask(estimator: Any, X: Any, sample_weight: Any = None, **kwargs):
-    """Posteriors of unlabelled Dask or Spark rows as tally rows."""
+    """Posteriors of unlabelled Dask or Spark rows as tally rows, and (``folds``, a small set)
+    the fold models' posteriors of the same rows: ``(proba, weights, tally, fold posteriors)``."""
     return _rows.unlabelled_proba_from_rows(estimator, X, sample_weight, **kwargs)
+
+
+def fold_scorer(estimator: Any, folds: Any, n_classes: int):
+    """A base model refit on the labelled rows and its fold models (``[(model, columns of its
+    classes), ...]``), to score Dask or Spark rows where they live (sent there once)."""
+    from ._folds import FoldScorer
+
+    return FoldScorer(estimator, folds, n_classes)
 
 
 def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weight: Any):
@@ -82,8 +92,9 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None,
-                               random_state: Any = None):
-    return _multiclass.estimate_multiclass_target(est, estimator, X, sample_weight, random_state)
+                               random_state: Any = None, folds: Any = None):
+    return _multiclass.estimate_multiclass_target(est, estimator, X, sample_weight, random_state,
+                                                  folds=folds)
 
 
 def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, template: Any):

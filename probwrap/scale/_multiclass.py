@@ -358,13 +358,15 @@ def _target_interval_sums(estimator, calibrator, src, prior, unit, Xb, wb):
 
 
 def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.0,
-                       target=None):
+                       target=None, moments=None):
     """The in-memory interval (``PriorEstimator.estimate`` with more than two classes) from
     per-block sums: the maximum-likelihood prior (EM without the shrinkage's pseudo-rows,
     started at the shrunk estimate); then, with the labelled class moments and ``target`` (the
     unlabelled rows' mean score, its per-row covariance and effective rows, from the shift
     test's sums), the class-moment interval (``moment_prior_interval``), or else (an estimator
     fitted before those were kept) one more pass for the delta-method interval's sums.
+    ``moments`` replaces the labelled class moments (a refit base model: the labelled rows
+    re-weighted so every fold holds its share, see ``_refit_folds``).
     Returns ``(ml prior, interval widened to contain prior, ml interval)``."""
     from ..shift._analytic import interval_from_sums, moment_prior_interval
     from ..shift._resample import _widen
@@ -372,7 +374,8 @@ def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.
     src = est.source_prior_
     est._warn_few_labelled(est.n_source_effective_)  # as in memory
     ml = _ml_prior(est, parts, prior, total)
-    moments = getattr(est, "_class_scores", None)
+    if moments is None:
+        moments = getattr(est, "_class_scores", None)
     if moments is not None and target is not None:
         found = moment_prior_interval(target, moments, est.confidence_level)
         k = src.shape[0]
@@ -456,14 +459,65 @@ def _em_dask(parts, src, init, total, tol, max_iter, pseudo=None, scale=1.0):
     return accelerated_em(em_map, init.copy(), tol, max_iter)
 
 
+def _refit_folds(est: Any, folds: Any) -> tuple | None:
+    """``(each fold's share of the labelled weight, the labelled class-score moments with each
+    class's rows re-weighted so every fold holds that share)`` for a base model refit on the
+    labelled rows (``folds``, a :class:`probwrap.scale._folds.FoldScorer`), as the in-memory
+    estimate computes them (``PriorEstimator.estimate`` with ``fold_proba``); None where the
+    in-memory estimate would not read the fold models (no fold models, or the labelled rows kept
+    as a tally)."""
+    from ..shift._analytic import class_score_moments, class_score_sums
+    from ..shift._interval import fold_shares
+
+    fold = getattr(est, "_src_fold", None)
+    source = est._source_rows()
+    if (folds is None or fold is None or source is None
+            or est._source_row_counts() is not None or fold.shape[0] != source[1].shape[0]):
+        return None
+    n_folds = int(fold.max()) + 1
+    if folds.n_folds != n_folds:
+        raise ValueError(
+            f"The fold models ({folds.n_folds}) do not match the labelled rows' folds "
+            f"({n_folds}); refit the wrapper."
+        )
+    share, w_fold = fold_shares(fold, source[1], source[2], n_folds)
+    src = est.source_prior_
+    moments = class_score_moments(class_score_sums(est.calibrate(source[0]), source[1], w_fold,
+                                                   src))
+    return share, moments
+
+
+def _fold_score_sums(folds, calibrator, src, share, unit, Xb, wb):
+    """Weighted sums of the unlabelled rows' shift-test scores averaged over the fold models
+    (each fold model's calibrated posteriors, weighted by the fold's share of the labelled
+    rows), and of their outer products: the unlabelled side of the shift test and of the
+    class-moment interval with a refit base model, as in memory. The weights are divided by
+    ``unit`` (see ``in_weight_unit``)."""
+    fp = folds.fold_proba(Xb)
+    k = src.shape[0]
+    w = block_weights(wb, fp.shape[1]) / unit
+    u = np.zeros((fp.shape[1], k - 1))
+    for s_k, f in zip(share, fp, strict=True):
+        if calibrator is not None and f.shape[0]:
+            f = calibrator.predict(f)
+        q = f / src
+        u += s_k * (q[:, 1:] - q[:, :1])
+    return w @ u, (u * w[:, None]).T @ u
+
+
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None,
-                               random_state: Any = None):
+                               random_state: Any = None, folds: Any = None):
     """Prior estimate (a :class:`probwrap.shift.PriorEstimate`) of unlabelled multiclass Dask or
     Spark rows.
 
     For ``method="em"`` fitted with ``interval="score"`` and ``n_resamples > 0``: the analytic
     (delta-method) interval of the in-memory path from per-block sums, with ``ml_prior`` and
     ``ml_interval``; otherwise no interval (``interval=None``).
+
+    ``folds`` (a :class:`probwrap.scale._folds.FoldScorer`, for a base model refit on the
+    labelled rows): the fold models score the rows where they live too, and the shift test and
+    the class-moment interval read their averaged scores as in memory (a small set: the
+    in-memory estimate with ``fold_proba``; beyond: one more pass for the sums of those scores).
     """
     from ..shift import PriorEstimate, acc_prior, bbse_prior
 
@@ -481,16 +535,28 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             # a small set (probwrap.scale._tally.KEPT_ROWS): the model's posteriors come to the client (one more
             # pass, predicting again: the kept blocks hold calibrated ones) and the in-memory
             # estimate runs on them, as adapt does in memory
-            p, w = rows.map_reduce(_kept_target, estimator).arrays
-            if unit != 1.0:
-                w = w / unit
+            fold_proba = None
+            if folds is not None:
+                # a refit base model: the fold models score the same rows in the same pass
+                from ._folds import scored_rows
+
+                p, fold_proba, w = scored_rows(rows, folds, unit)
+            else:
+                p, w = rows.map_reduce(_kept_target, estimator).arrays
+                if unit != 1.0:
+                    w = w / unit
             return est.estimate(p, None if sample_weight is None else w,
-                                random_state=random_state)
+                                random_state=random_state, fold_proba=fold_proba)
         src = est.source_prior_
         method = est.method
         n_iter, converged, distance = 0, True, 0.0
         n_eff = total**2 / squared
         su, suu = parts.reduce(_score_sums, None, src)
+        refit = _refit_folds(est, folds)
+        # the shift test's (and the class-moment interval's) unlabelled side: the scores
+        # averaged over the fold models for a refit base model (one more pass), as in memory
+        fsu, fsuu = (su, suu) if refit is None else rows.map_reduce(
+            _fold_score_sums, folds, est.calibrator_, src, refit[0], unit)
         if method == "em":
             prior, n_iter, converged, distance = _em_dask(
                 parts, src, src.copy(), total, float(est.tol), int(est.max_iter),
@@ -517,10 +583,11 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             prior = point.prior
         ml = ml_interval = interval = None
         if method == "em" and getattr(est, "_labelled_cov", None) is not None:
-            t_mean = su / total
-            target = (t_mean, suu / total - np.outer(t_mean, t_mean), n_eff)
-            ml, interval, ml_interval = _analytic_interval(est, estimator, rows, parts, prior,
-                                                           total, n_eff, unit, target)
+            t_mean = fsu / total
+            target = (t_mean, fsuu / total - np.outer(t_mean, t_mean), n_eff)
+            ml, interval, ml_interval = _analytic_interval(
+                est, estimator, rows, parts, prior, total, n_eff, unit, target,
+                moments=None if refit is None else refit[1])
         elif method == "em":
             # as in memory, every EM estimate has its maximum-likelihood prior (the evidence
             # gate's amplification below reads it)
@@ -534,8 +601,8 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         estimate_amplification,
     )
 
-    mean = su / total
-    cov = suu / total - np.outer(mean, mean)
+    mean = fsu / total
+    cov = fsuu / total - np.outer(mean, mean)
     source_score = getattr(est, "_source_score", None)
     test = _score_stat_moments((mean, cov, n_eff), _current_source_score(source_score), k,
                                 pooled=True, source_prior=src)

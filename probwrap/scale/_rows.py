@@ -174,13 +174,21 @@ def unlabelled_proba_from_rows(
     random_state: Any = None,
     resolution: float = DEFAULT_RESOLUTION,
     owner: str = "PriorShiftWrapper.adapt",
+    folds: Any = None,
 ):
     """Binary posteriors of unlabelled Dask or Spark rows as tally rows:
-    ``(proba (m, 2), weights, tally)``.
+    ``(proba (m, 2), weights, tally, fold posteriors)``.
 
     Replicates (if any) use stream 1 of the seed, so they are independent of the labelled
     tally's (stream 0) for the same ``random_state``. Weights beyond about 1e+-77 come back
     divided by a power of two, with the in-memory path's warning naming ``owner``.
+
+    ``folds`` (a :class:`probwrap.scale._folds.FoldScorer`: a base model refit on the labelled
+    rows and its fold models): for a small set (at most ``KEPT_ROWS`` rows, whose rows come back
+    as rows) one more pass scores every block with the refit and every fold model where it
+    lives, and the rows' posteriors, the fold models' posteriors (one (m, 2) array per fold)
+    and the weights all come from that pass, in block order; the last entry is None otherwise
+    (no fold models, or a larger set, which comes back as a tally of the refit model's score).
     """
     tally_of_model, engine = _tally_step(X)
     _check_binary(estimator, engine)
@@ -200,9 +208,18 @@ def unlabelled_proba_from_rows(
     if kept is not None:
         # a small set: the rows' own probabilities, as in memory (no tally: ``None``)
         proba, _, w = kept
-        return proba, (None if tally.kept_rows[2] is None else w), None
+        weighted = tally.kept_rows[2] is not None
+        if folds is None:
+            return proba, (w if weighted else None), None, None
+        # a refit base model: the fold models score the same rows where they live (sent
+        # once), in one pass with the refit model, so that every row's posteriors line up
+        from ._folds import scored_rows
+
+        proba, fold_proba, w = scored_rows(rows_of(X, None, sample_weight, estimator), folds,
+                                           tally.weight_unit)
+        return proba, (w if weighted else None), None, fold_proba
     from ._dask import _warn_binned_rows
 
     _warn_binned_rows(owner, tally, stacklevel=5)
     proba, w = tally.to_scores(proba=True)
-    return proba, w, tally
+    return proba, w, tally, None

@@ -725,7 +725,8 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
     rng = check_random_state(est.random_state)
     seeds = {lab: rng.randint(2**31 - 1) for lab in labels}
     source = getattr(owner, "_source_tally", None)
-    shared = _broadcast(X, (owner.estimator_, est, source, seeds))
+    # one broadcast: the model (with a refit base model's fold models), the estimator, seeds
+    shared = _broadcast(X, (owner.estimator_, est, source, seeds, owner._fold_scorer()))
     batch_type = X.schema[batch_col].dataType
     schema = T.StructType([
         T.StructField("batch", batch_type),
@@ -766,14 +767,18 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         from .._validation import check_sample_weight
         from ._dask import monitor_proba
 
-        model, prior_est, src, seed_of = shared.value
-        proba = np.asarray(model.predict_proba(_features(pdf, features, named)), dtype=float)
+        model, prior_est, src, seed_of, folds = shared.value
+        Xb = _features(pdf, features, named)
+        proba = np.asarray(model.predict_proba(Xb), dtype=float)
         w = check_sample_weight(
             None if weight is None else pdf[weight].to_numpy(dtype=float, na_value=np.nan),
             proba.shape[0],
         )
         order = np.lexsort((w, *proba.T[::-1]))  # by class-0 probability, ..., then weight
-        row, unit, caught = monitor_proba(prior_est, src, seed_of[key], proba[order], w[order])
+        # a refit base model: the batch's rows scored by every fold model too, in the same order
+        fold_proba = None if folds is None else [f[order] for f in folds.fold_proba(Xb)]
+        row, unit, caught = monitor_proba(prior_est, src, seed_of[key], proba[order], w[order],
+                                          fold_proba)
         n, n_eff, prior, lower, upper, stat, pvalue, conv, by_class = row
         return pd.DataFrame({
             "batch": [key], "n_rows": [int(n)], "n_effective": [float(n_eff)],

@@ -1,0 +1,99 @@
+"""The fold models of a base model refit on the labelled rows, scoring Dask or Spark rows where
+they live.
+
+A :class:`~probwrap.PriorShiftWrapper` fitted in memory on an unfitted base model keeps the
+cross-fitting's fold models, and its shift test and default interval compare the unlabelled rows'
+scores averaged over the fold models with the labelled rows' held-out scores from the same models
+(see :func:`probwrap.shift.score_interval`, ``fold_proba``). On Dask or Spark rows the fold models
+go to the workers (executors) with the refit model, once — one object in the task graph, or one
+broadcast variable — and every block of rows is scored there by all of them in one pass, so the
+refit model's and the fold models' posteriors of a row always come from the same pass over the
+same rows.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from ._blocks import block_weights, n_block_rows, predict_block
+
+__all__ = ["FoldScorer"]
+
+
+class FoldScorer:
+    """The refit model and the fold models of a cross-fitting, with the column of each fold
+    model's classes among all classes.
+
+    Parameters
+    ----------
+    estimator : fitted classifier
+        The model refit on all labelled rows (``estimator_``).
+    folds : sequence of (fitted classifier, array of int)
+        Each fold model with the columns (in the wrapper's ``classes_``) of its own
+        ``classes_``; a class absent from a fold's training rows gets probability 0 there, as
+        in memory (``probwrap._heldout.fold_columns``).
+    n_classes : int
+        Number of classes of the wrapper.
+    """
+
+    def __init__(self, estimator: Any, folds: Any, n_classes: int) -> None:
+        self.estimator = estimator
+        self.folds = [(model, np.asarray(cols, dtype=np.intp)) for model, cols in folds]
+        self.n_classes = int(n_classes)
+
+    @property
+    def n_folds(self) -> int:
+        return len(self.folds)
+
+    def fold_proba(self, Xb: Any) -> np.ndarray:
+        """Posteriors of the rows ``Xb`` from each fold model, shape (n_folds, n, n_classes)."""
+        k = self.n_classes
+        n = n_block_rows(Xb)
+        out = np.zeros((len(self.folds), n, k))
+        for i, (model, cols) in enumerate(self.folds):
+            out[i][:, cols] = predict_block(model, "predict_proba", Xb, cols.shape[0])
+        return out
+
+    def proba(self, Xb: Any) -> np.ndarray:
+        """The refit model's posteriors of ``Xb``, shape (n, n_classes)."""
+        return predict_block(self.estimator, "predict_proba", Xb, self.n_classes)
+
+
+class KeptScored:
+    """Rows scored by the refit and the fold models, with their weights, concatenated in block
+    order by ``+`` (the reduction of :mod:`probwrap.scale._rows`): ``proba`` (n, k),
+    ``folds`` (n, n_folds, k) and ``weights`` (n,)."""
+
+    def __init__(self, proba: np.ndarray, folds: np.ndarray, weights: np.ndarray) -> None:
+        self.proba = proba
+        self.folds = folds
+        self.weights = weights
+
+    def __add__(self, other: KeptScored) -> KeptScored:
+        return KeptScored(np.concatenate([self.proba, other.proba]),
+                          np.concatenate([self.folds, other.folds]),
+                          np.concatenate([self.weights, other.weights]))
+
+    def fold_list(self) -> list[np.ndarray]:
+        """The fold models' posteriors as one (n, k) array per fold, in fold order."""
+        return [np.ascontiguousarray(self.folds[:, i]) for i in range(self.folds.shape[1])]
+
+
+def kept_scored_block(scorer: FoldScorer, Xb: Any, wb: Any) -> KeptScored:
+    """One block of unlabelled rows scored by the refit and every fold model (see
+    :class:`KeptScored`)."""
+    p = scorer.proba(Xb)
+    w = block_weights(wb, p.shape[0])
+    return KeptScored(p, np.moveaxis(scorer.fold_proba(Xb), 0, 1), w)
+
+
+def scored_rows(rows: Any, scorer: FoldScorer, unit: float = 1.0) -> tuple:
+    """``(proba, [fold posteriors, ...], weights)`` of a small set of unlabelled rows (Dask or
+    Spark rows, see :func:`probwrap.scale._rows.rows_of`) in block order, from one pass that
+    scores every block with the refit and the fold models where it lives; the weights divided
+    by ``unit`` (the power of two of weights beyond about 1e+-77, as in memory)."""
+    kept = rows.map_reduce(kept_scored_block, scorer)
+    w = kept.weights / unit if unit != 1.0 else kept.weights
+    return kept.proba, kept.fold_list(), w
