@@ -223,7 +223,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         much the refit moves with the draw of the labelled rows (before 4 December 2026 it did
         not: on scikit-learn's digits, "is an 8", 300 labelled rows, the 95 % interval covered
         86.5 %, now 93.0 %; docs/prior_shift.md, "A base model refit on the labelled rows").
-        The bootstrap intervals, ``adapt`` on Dask or Spark rows, more than two classes with a
+        The bootstrap intervals, ``adapt`` on more than 20,000 two-class Dask or Spark rows
+        (a tally of the refit model's score), more than two classes with a
         method other than ``"em"`` (these warn) and more than 20,000 labelled rows without
         ``keep_heldout`` do not carry it.
     shift_pvalue_ : float
@@ -594,8 +595,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
     def _warn_refit_left_out(self, folds: Any) -> None:
         """Warn when the base model was refit here and its labelled rows are kept, but the
-        interval asked for cannot read the fold models (a bootstrap interval, unlabelled Dask
-        or Spark rows, a multiclass method other than EM): it then leaves out how much the
+        interval asked for cannot read the fold models (a bootstrap interval, more than 20,000
+        unlabelled two-class Dask or Spark rows, a multiclass method other than EM): it then leaves out how much the
         refit moves with the labelled draw."""
         carried = folds is not None and self.interval == "score" and (
             self.classes_.shape[0] == 2 or self.method == "em")
