@@ -7,8 +7,9 @@ fold models with the labelled rows' held-out scores of the same models (DML2 of 
 al. 2018; tests/test_prior_shift_refit_interval.py checks the in-memory path against NumPy).
 Before 4 December 2026 the Dask path did not carry it: multiclass ``adapt`` and every ``monitor``
 read the refit model only (on scikit-learn's digits, 400 labelled rows, 400 unlabelled: interval
-ends 0.0033 and shift statistic 4.84 against 4.67 in memory; breast-cancer ``monitor`` batches up
-to 0.48 apart), and binary ``adapt`` scored the Dask rows with each fold model on the client.
+ends 0.0033 and shift statistic 4.84 against 4.67 in memory; ``monitor`` batches of 100 rows:
+interval ends up to 0.0034 / 0.011 apart and statistics up to 0.48 / 0.69, breast cancer /
+digits), and binary ``adapt`` scored the Dask rows with each fold model on the client.
 Now the fold models go to the workers once and score every block there, in one pass with the
 refit model. The fold models' posteriors are also checked against a direct rebuild with
 scikit-learn's ``StratifiedKFold`` and ``clone``.
@@ -143,17 +144,20 @@ def test_binary_fold_posteriors_are_the_direct_fold_models(cancer):
     assert np.max(np.abs(direct.interval - without.interval)) > 1e-4
 
 
+@pytest.mark.parametrize("weighted", [False, True])
 @pytest.mark.parametrize("path", ["rows", "sums"])
-def test_multiclass_adapt_on_dask_is_the_in_memory_adapt(digits, request, path):
+def test_multiclass_adapt_on_dask_is_the_in_memory_adapt(digits, request, path, weighted):
     # "rows": a small set, whose rows come to the client with their fold posteriors; "sums":
     # the reductions of larger sets (forced on these rows), one more pass for the sums of the
     # fold-averaged scores
     if path == "sums":
         request.getfixturevalue("tally_path")
     X, y, X_new, model = digits
-    mem = _quiet(lambda: copy.deepcopy(model).adapt(X_new))
+    sw = np.random.default_rng(7).uniform(0.5, 2.0, X_new.shape[0]) if weighted else None
+    mem = _quiet(lambda: copy.deepcopy(model).adapt(X_new, sample_weight=sw))
     dist, messages = _caught(lambda: copy.deepcopy(model).adapt(
-        da.from_array(X_new, chunks=(100, 64))))
+        da.from_array(X_new, chunks=(100, 64)),
+        sample_weight=None if sw is None else da.from_array(sw, chunks=100)))
     assert not [m for m in messages if REFIT in m]
     _same(dist, mem)
     np.testing.assert_allclose(dist.prior_estimate_.ml_interval, mem.prior_estimate_.ml_interval,
@@ -161,8 +165,9 @@ def test_multiclass_adapt_on_dask_is_the_in_memory_adapt(digits, request, path):
     # the fold models made the difference: the refit model alone gives another test
     est = model.prior_estimator_
     proba = model.estimator_.predict_proba(X_new)
-    direct = _quiet(lambda: est.estimate(proba, fold_proba=_direct_fold_proba(X, y, X_new, 0)))
-    without = _quiet(lambda: est.estimate(proba))
+    direct = _quiet(lambda: est.estimate(proba, sw,
+                                         fold_proba=_direct_fold_proba(X, y, X_new, 0)))
+    without = _quiet(lambda: est.estimate(proba, sw))
     assert dist.shift_statistic_ == pytest.approx(direct.shift_statistic, rel=1e-9)
     assert abs(without.shift_statistic - direct.shift_statistic) > 0.05
 
@@ -220,3 +225,20 @@ def test_frozen_model_on_dask_is_unchanged(cancer):
     dist = _quiet(lambda: copy.deepcopy(model).adapt(da.from_array(X_new, chunks=(70, 30))))
     np.testing.assert_array_equal(dist.target_prior_interval_, mem.target_prior_interval_)
     assert dist.shift_statistic_ == mem.shift_statistic_
+
+
+def test_a_fold_without_a_class_is_placed_as_in_memory():
+    # digits with a single labelled row of class 9: the fold model whose training part lacks
+    # it has nine columns, placed among the ten (class 9 at probability 0) on the workers as
+    # in memory (probwrap._heldout.fold_columns)
+    X, y = load_digits(return_X_y=True)
+    order = np.random.default_rng(2).permutation(y.shape[0])
+    lab = np.concatenate([[i for i in order if y[i] == 9][:1],
+                          [i for i in order if y[i] != 9][:300]])
+    new = np.array([i for i in order if i not in set(lab)][:300])
+    model = _quiet(lambda: PriorShiftWrapper(_model(), cv=3, random_state=0).fit(X[lab],
+                                                                                  y[lab]))
+    assert sorted(len(c) for _, c in model._fold_models) == [9, 10, 10]
+    mem = _quiet(lambda: copy.deepcopy(model).adapt(X[new]))
+    dist = _quiet(lambda: copy.deepcopy(model).adapt(da.from_array(X[new], chunks=(100, 64))))
+    _same(dist, mem)
