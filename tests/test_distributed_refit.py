@@ -185,16 +185,27 @@ def test_monitor_on_dask_reads_the_fold_models_as_in_memory(cancer, digits):
         np.testing.assert_allclose(dist["shift_statistic"][0], first.shift_statistic_, atol=1e-9)
 
 
-def test_monitor_on_a_dask_cluster_sends_the_models_once(cancer, client):
-    # on a real (in-process) distributed cluster: the same table; the models travel as one key
-    # of the graph that every block's task reads
+def test_on_a_dask_cluster_the_models_are_one_object_of_the_graph(cancer, digits, client):
+    # on a real (in-process) distributed cluster: the same results; the models travel as one
+    # key of the graph that every block's task reads
+    from probwrap.scale._dask import DaskRows
+
     _, _, X_new, _, model = cancer
     mem = _quiet(lambda: model.monitor(X_new, batch_size=60))
     with dask.config.set(scheduler=client):
         dist = _quiet(lambda: model.monitor(da.from_array(X_new, chunks=(60, 30))))
+        adapted = _quiet(lambda: copy.deepcopy(model).adapt(da.from_array(X_new,
+                                                                          chunks=(60, 30))))
+        multi = _quiet(lambda: copy.deepcopy(digits[3]).adapt(da.from_array(digits[2],
+                                                                            chunks=(100, 64))))
     np.testing.assert_allclose(dist["upper"], mem["upper"], rtol=0, atol=1e-9)
     np.testing.assert_allclose(dist["shift_statistic"], mem["shift_statistic"], rtol=0,
                                atol=1e-9)
+    _same(adapted, _quiet(lambda: copy.deepcopy(model).adapt(X_new)))
+    _same(multi, _quiet(lambda: copy.deepcopy(digits[3]).adapt(digits[2])))
+    scorer = model._fold_scorer()
+    shared = DaskRows(da.from_array(X_new, chunks=(60, 30)), None, None).shared(scorer)
+    assert len(shared.__dask_graph__()) == 1
 
 
 def test_large_binary_sets_and_bootstrap_intervals_still_warn(cancer, tally_path):

@@ -175,6 +175,12 @@ class DaskRows:
     def apply_first(self, fn: Any, *args: Any) -> Any:
         return self._dask.delayed(fn, pure=True)(self._blocks[0], *args).compute()
 
+    def shared(self, value: Any) -> Any:
+        """``value`` (models) as one object of the task graph, for the arguments of
+        ``map_reduce`` / ``persist``: every block's task reads it, and it reaches each worker
+        once instead of travelling inside every task."""
+        return self._dask.delayed(value, pure=True, traverse=False)
+
 
 def _tree_merge(dask: Any, parts: list) -> Any:
     """Tree of pairwise merges (tallies) or sums (see ``_combine``) of delayed block results."""

@@ -94,6 +94,6 @@ def scored_rows(rows: Any, scorer: FoldScorer, unit: float = 1.0) -> tuple:
     Spark rows, see :func:`probwrap.scale._rows.rows_of`) in block order, from one pass that
     scores every block with the refit and the fold models where it lives; the weights divided
     by ``unit`` (the power of two of weights beyond about 1e+-77, as in memory)."""
-    kept = rows.map_reduce(kept_scored_block, scorer)
+    kept = rows.map_reduce(kept_scored_block, rows.shared(scorer))
     w = kept.weights / unit if unit != 1.0 else kept.weights
     return kept.proba, kept.fold_list(), w

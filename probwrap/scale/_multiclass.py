@@ -556,7 +556,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         # the shift test's (and the class-moment interval's) unlabelled side: the scores
         # averaged over the fold models for a refit base model (one more pass), as in memory
         fsu, fsuu = (su, suu) if refit is None else rows.map_reduce(
-            _fold_score_sums, folds, est.calibrator_, src, refit[0], unit)
+            _fold_score_sums, rows.shared(folds), est.calibrator_, src, refit[0], unit)
         if method == "em":
             prior, n_iter, converged, distance = _em_dask(
                 parts, src, src.copy(), total, float(est.tol), int(est.max_iter),

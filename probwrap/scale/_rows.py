@@ -10,7 +10,10 @@ are written once against this interface and run unchanged on either engine:
 - ``rows.persist(make, *args)``: ``make(*args, Xb, yb, wb)`` of every block kept where the block
   lives (Dask: persisted on the workers; Spark: a cached DataFrame of pickled blocks), with
   ``.reduce(fn, *args)`` summing ``fn(block, *args)`` over them and ``.release()``;
-- ``rows.apply_first(fn, *args)``: ``fn(Xb, *args)`` on the first block (to learn a shape).
+- ``rows.apply_first(fn, *args)``: ``fn(Xb, *args)`` on the first block (to learn a shape);
+- ``rows.shared(value)``: ``value`` (large: models) as an argument of the two above that
+  reaches each worker once (Dask: one object of the task graph; Spark: as it is, since the
+  arguments already travel as one broadcast variable).
 
 ``Xb`` is what the estimator takes (a Dask block; for Spark the pandas DataFrame of the model's
 feature columns, or their NumPy array when the model has no feature names), ``yb`` the labels and

@@ -669,6 +669,11 @@ class SparkRows:
         cached = self._frame.select(*self._columns).mapInPandas(make_blocks, "block binary")
         return SparkBlocks(cached.cache())
 
+    def shared(self, value: Any) -> Any:
+        """``value`` as it is: the arguments of ``map_reduce`` / ``persist`` already go to the
+        executors as one broadcast variable (the twin of ``DaskRows.shared``)."""
+        return value
+
     def apply_first(self, fn: Any, *args: Any) -> Any:
         features, named, _, _ = self._split
         pdf = self._frame.select(*features).limit(1000).toPandas()
