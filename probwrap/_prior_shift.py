@@ -21,7 +21,7 @@ from ._heldout import (
 from ._prior_shift_tallied import _tally_rows, tallied_adapt, tallied_monitor
 from ._validation import check_sample_weight, plain
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
-from .shift._estimator import CALIBRATIONS, PRIOR_METHODS
+from .shift._estimator import CALIBRATIONS, IMPRECISE_REACH, PRIOR_METHODS
 from .shift._shift_tests import evidence_cutoff
 
 #: Fewer labelled rows of a class than this makes ``fit`` warn (see ``_warn_few_class_rows``).
@@ -660,7 +660,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.evidence_cutoff_ = float(cutoff)
         self.adaptation_weight_ = float(weight)
         self.shift_detected_ = bool(weight > 0)
-        self._warn_uninformative(interval, getattr(res, "identified", True))
+        if not self._warn_uninformative(interval, getattr(res, "identified", True)):
+            self._warn_imprecise(interval, getattr(res, "identified", True))
         src = self.source_prior_
         if self.known_prior_ is not None:
             self.applied_prior_ = self.known_prior_.copy()
@@ -676,15 +677,18 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             )
         return self
 
-    def _warn_uninformative(self, interval: Any, identified: bool) -> None:
+    def _warn_uninformative(self, interval: Any, identified: bool) -> bool:
         """Warn when a class's interval spans all of [0, 1]: the data then say nothing about
         that class's share, and ``target_prior_`` is not a usable estimate (whatever its value).
-        Not repeated where the estimator already warned that the priors are not identified."""
-        if interval is None or not identified:
-            return
+        Not repeated where the estimator already warned that the priors are not identified.
+        Returns whether either is the case (then no :meth:`_warn_imprecise` on top)."""
+        if interval is None:
+            return False
+        if not identified:
+            return True
         iv = np.asarray(interval, dtype=float)
         if iv.ndim != 2 or iv.shape[1] != 2:
-            return
+            return False
         wide = np.flatnonzero((iv[:, 0] <= 1e-6) & (iv[:, 1] >= 1.0 - 1e-6))
         if wide.size:
             from .shift import PriorNotIdentifiedWarning
@@ -700,6 +704,47 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 PriorNotIdentifiedWarning,
                 stacklevel=3,
             )
+        return bool(wide.size)
+
+    def _warn_imprecise(self, interval: Any, identified: bool) -> None:
+        """Warn (once) when the interval of a class share reaches more than ``IMPRECISE_REACH``
+        (0.25) from ``target_prior_``, below or above: the estimate can then be that far from
+        the unlabelled rows' share with nothing else looking wrong. In
+        benchmarks/prior_far_off.py (845 binary fits on bundled real data) every estimate more
+        than 0.25 from the truth that drew no other warning had such an interval, mostly from
+        a model separating the classes weakly (docs/prior_shift.md, 'Estimates far from the
+        truth')."""
+        if interval is None or not identified:
+            return
+        iv = np.asarray(interval, dtype=float)
+        est = np.asarray(self.target_prior_, dtype=float)
+        if iv.ndim != 2 or iv.shape != (est.shape[0], 2):
+            return
+        reach = np.maximum(est - iv[:, 0], iv[:, 1] - est)
+        far = np.flatnonzero(reach > IMPRECISE_REACH)
+        if self.classes_.shape[0] == 2:
+            far = far[far == 1]  # the two shares' intervals mirror each other: name one
+        if not far.size:
+            return
+        from .shift import ImprecisePriorWarning
+
+        listed = "; ".join(
+            f"{plain(self.classes_[c])!r}: estimate {est[c]:.3g}, interval [{iv[c, 0]:.3g}, "
+            f"{iv[c, 1]:.3g}]" for c in far[:4])
+        warnings.warn(
+            f"adapt: the {self.confidence_level:.0%} interval of the class share reaches more "
+            f"than {IMPRECISE_REACH:g} from the estimate ({listed}), so target_prior_ may be "
+            "that far from the share in these rows: the model separates the classes too "
+            "weakly, or the labelled rows are too few, to pin the share down (on bundled real "
+            "data, estimates more than 0.25 off with no other warning all came with such "
+            "intervals; docs/prior_shift.md, 'Estimates far from the truth'). Read the interval, "
+            "not the estimate. predict_proba moves only as far as the shift evidence allows "
+            f"(adaptation_weight_ = {self.adaptation_weight_:.3g}). For a firmer estimate, label "
+            "more rows of each class, adapt on more rows, or use a model that separates the "
+            "classes better.",
+            ImprecisePriorWarning,
+            stacklevel=3,
+        )
 
     def monitor(
         self,

