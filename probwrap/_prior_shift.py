@@ -537,6 +537,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             With ``target_prior_``, ``target_prior_interval_``, ``shift_pvalue_`` and
             ``shift_statistic_`` set. Unless ``target_prior`` is given, ``predict_proba`` now
             adjusts to ``target_prior_``.
+
+        Warns
+        -----
+        ImprecisePriorWarning
+            Once, when the interval of a class share reaches more than 0.25 from
+            ``target_prior_`` without spanning all of [0, 1]: the estimate may be that far from
+            the rows' share (docs/prior_shift.md, "Estimates far from the truth").
+        PriorNotIdentifiedWarning
+            When a class share's interval spans all of [0, 1].
         """
         check_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to adapt")
