@@ -23,8 +23,6 @@ from ._validation import plain
 from .calibration._base import (
     CalibrationMap,
     FewClassRowsWarning,
-    WeightScaleWarning,
-    count_weights,
     one_vs_rest_copy,
 )
 from .calibration._binning import BinningMap
@@ -321,16 +319,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
 
     def _count_scale_weights(self, w: np.ndarray) -> np.ndarray:
         """Weights as row counts for the maps (see ``docs/calibration.md``, "Weights")."""
-        out, rescaled = count_weights(w)
-        if rescaled:
-            warnings.warn(
-                "CalibrationWrapper: `sample_weight` sums to less than the number of rows, so "
-                "the weights cannot be row frequencies; for the calibration map they are "
-                f"rescaled to sum to Kish's effective sample size ({out.sum():.4g}).",
-                WeightScaleWarning,
-                stacklevel=3,
-            )
-        return out
+        from ._weights import count_scale_weights
+
+        return count_scale_weights(w, "CalibrationWrapper", "for the calibration map")
 
     def _fit_multiclass_dask(self, X: Any, y: Any, sample_weight: Any) -> CalibrationWrapper:
         """Multiclass Dask rows with a frozen estimator: temperature scaling by reductions over

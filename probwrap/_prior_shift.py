@@ -398,9 +398,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         sample_weight : array-like of shape (n,), default=None
             Row weights; passed to the estimator where it accepts them, and used for
             ``source_prior_``, the calibration and the confusion matrix. As in ``adapt``, the
-            shift test and the interval count Kish's effective number of labelled rows, so
-            the scale of the weights changes nothing (docs/prior_shift.md, "How sure is the
-            estimate, and has anything moved?").
+            shift test and the interval count Kish's effective number of labelled rows
+            (docs/prior_shift.md, "How sure is the estimate, and has anything moved?"). The
+            calibration inside reads them by the calibration maps' rule (docs/weights.md):
+            row counts when they sum to at least the number of rows — whole-number weights
+            then fit as the rows duplicated, and multiplying them by 1,000 means a thousand
+            copies of every row, which changes its test of whether ``predict_proba`` keeps
+            the model's own probabilities — otherwise relative, counted as Kish's size, the
+            same at every scale. A ``WeightScaleWarning`` (once) says when the reading moves
+            with the scale: weights that sum to less than the rows, and weights read as
+            counts that are not whole numbers or all share a factor above 1.
         **fit_params : dict
             Further parameters for the estimator's ``fit``.
 
@@ -416,10 +423,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             from .scale._entry import fit_multiclass_source
 
             est = fit_multiclass_source(self, X, y, sample_weight)
+            kept = getattr(est, "_src", None)
+            if sample_weight is not None and kept is not None:
+                # a small set, fitted in memory on its collected rows: the same warning
+                self._warn_weight_reading(kept[2])
             self._source_tally = None
             return self._finish_fit(est)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
         self._warn_few_class_rows(ho.class_row_counts(ho.sample_weight))
+        if sample_weight is not None and not ho.from_tally:
+            self._warn_weight_reading(ho.sample_weight)
         est = PriorEstimator(
             self.method,
             calibration=self.calibration,
@@ -452,6 +465,34 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if est._src_fold is None:
             self._fold_models = None
         return self._finish_fit(est)
+
+    def _warn_weight_reading(self, w: np.ndarray) -> None:
+        """One :class:`~probwrap.calibration.WeightScaleWarning` when the calibration's reading
+        of the labelled weights moves with their scale (docs/weights.md).
+
+        The calibration inside (``calibrator_``) reads weights by the calibration maps' rule:
+        relative, counted as Kish's effective size, when they sum to less than the rows (as
+        ``CalibrationWrapper`` says in the same words); otherwise row counts. Counts set its
+        likelihood-ratio test of the model's own probabilities (which ``predict_proba``
+        returns before any ``adapt``), its scale prior and its output floor, and through the
+        calibrated posteriors the estimate, the shift test and the interval: scikit-learn's
+        breast cancer, a frozen logistic regression, 60 labelled rows weighted 1-3, times
+        1,000: the test's p-value 0.25 -> < 1e-6 and ``predict_proba`` 0.116 apart. Whole
+        numbers without a common factor are meant as counts; scaled or fractional weights
+        read as counts are warned about (:func:`probwrap._weights.warn_count_reading`).
+        """
+        from ._weights import count_scale_weights, warn_count_reading
+
+        what = ("for the calibration inside it (and its test of whether to keep the model's "
+                "own probabilities)")
+        count_scale_weights(w, "PriorShiftWrapper.fit", what)
+        warn_count_reading(
+            w, "PriorShiftWrapper.fit",
+            "the calibration inside it (its test of whether predict_proba keeps the model's own "
+            "probabilities, its scale prior and output floor) counts",
+            "that test's choice and predict_proba, and through the calibrated probabilities "
+            "adapt's estimate, shift test and interval",
+        )
 
     def _warn_few_class_rows(self, counts: np.ndarray) -> None:
         """Warn, naming the class(es), when a class has fewer than ``MIN_CLASS_ROWS`` labelled
