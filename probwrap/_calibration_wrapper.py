@@ -9,6 +9,7 @@ from typing import Any
 import numpy as np
 from scipy.special import logsumexp
 from sklearn.base import clone
+from sklearn.utils import _safe_indexing, indexable
 from sklearn.utils.metaestimators import available_if
 
 from ._calibration_auto import CALIBRATION_METHODS, _AutoChoice, _boundary_of
@@ -17,6 +18,7 @@ from ._heldout import (
     _is_dask,
     _multiclass_dask,
     check_fitted,
+    fold_columns,
 )
 from ._predictions import HeldOutPredictions
 from ._validation import plain
@@ -52,6 +54,19 @@ _STACKED_LOGSUMEXP_MAX_CLASSES = 8
 
 #: Exact zero probabilities become this (the smallest positive float) before taking logs.
 _TINY = np.nextafter(0.0, 1.0)
+
+#: The spreads of ``predict_with``'s check are measured on at most this many labelled rows.
+_SPREAD_CHECK_MAX_ROWS = 20_000
+
+#: Values of ``CalibrationWrapper(predict_with=...)``.
+_PREDICT_WITH = ("auto", "refit", "fold_models")
+
+#: ``predict_with="auto"`` predicts with the fold models when their scores' spreads on the
+#: labelled rows (standard deviations of the map's input scores) differ from fold to fold by
+#: more than this (the standard deviation of their logs): the model's scale then changes from
+#: fit to fit, and the refitted model's scale is one more draw that the map fitted on the
+#: pooled held-out scores does not know. MEASURED BELOW.
+FOLD_SPREAD_VARIATION_LIMIT = 0.10
 
 
 def _kept_probability_map() -> IdentityMap:
@@ -147,11 +162,25 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
     tally_resolution : float, default=1e-3
         Dask input only: bin width on the log-odds scale of the score tallies that the
         predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
+    predict_with : {"auto", "refit", "fold_models"}, default="auto"
+        Which model's scores the fitted map turns into probabilities when the wrapper
+        cross-fits its model (ignored for a :class:`~sklearn.frozen.FrozenEstimator`, which
+        is the model). The map is fitted on the fold models' held-out scores. ``"refit"``:
+        the model refitted on all rows (``estimator_``). ``"fold_models"``: each fold model
+        (``fold_models_``), its scores through the same map, the probabilities averaged with
+        equal weights; they are the models whose scores the map was fitted on, at the cost
+        of one prediction per fold. ``"auto"``: the refitted model unless the fold
+        models score the labelled rows on scales that differ from fold to fold (a model whose
+        scale changes from fit to fit, such as ``SGDClassifier``; see
+        ``fold_spread_variation_``): the refitted model's scale is then one more draw that the
+        map does not know, and the fold models predict. ``"refit"`` warns in that case.
+        Measured on small bundled sets in docs/calibration.md, "Which model predicts".
 
     Attributes
     ----------
     estimator_ : classifier
-        The fitted inner estimator used for prediction.
+        The fitted inner estimator: the frozen one, or a clone refitted on all rows (which
+        predicts unless ``predicted_with_ == "fold_models"``).
     calibrator_ : CalibrationMap or list of CalibrationMap
         The fitted map (a list with one binary map per class for one-vs-rest). A class with no
         held-out rows gets no map of its own: with probability outputs its entry is an
@@ -180,9 +209,38 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         ``"decision_function"``).
     classes_ : ndarray
         Class labels.
+    predicted_with_ : str
+        ``"refit"`` or ``"fold_models"`` (see ``predict_with``), ``"frozen"`` for a
+        :class:`~sklearn.frozen.FrozenEstimator`.
+    fold_models_ : list of classifier
+        The fitted fold models that predict when ``predicted_with_ == "fold_models"``;
+        otherwise empty (they are not kept).
+    refit_spread_ratios_ : ndarray of shape (n_folds,)
+        Cross-fitted models only (empty for a frozen one): for each fold model, the spread
+        (standard deviation) of the refitted model's map input scores on the labelled rows over
+        that fold model's; near 1 where they score the rows on one scale.
+    fold_spread_variation_ : float
+        Cross-fitted models only (NaN for a frozen one): the standard deviation of the logs of
+        the fold models' spreads on the labelled rows. ``predict_with="auto"`` predicts with
+        the fold models when it exceeds 0.10 (``inf`` when some fold model, but not all,
+        scores every row alike).
 
     Examples
     --------
+    >>> from sklearn.linear_model import SGDClassifier
+    >>> from sklearn.preprocessing import StandardScaler
+    >>> from sklearn.pipeline import make_pipeline
+    >>> from probwrap import CalibrationWrapper
+    >>> from probwrap.datasets import make_parcels
+    >>> parcels = make_parcels(400, random_state=1)
+    >>> margins = make_pipeline(StandardScaler(), SGDClassifier(random_state=0))
+    >>> folds = CalibrationWrapper(margins, method="platt", predict_with="fold_models",
+    ...                            random_state=0).fit(parcels.data, parcels.target)
+    >>> folds.predicted_with_, len(folds.fold_models_)
+    ('fold_models', 5)
+    >>> folds.predict_proba(parcels.data[:3]).shape
+    (3, 2)
+
     >>> from sklearn.linear_model import LogisticRegression
     >>> from sklearn.pipeline import make_pipeline
     >>> from sklearn.preprocessing import StandardScaler
@@ -210,6 +268,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         candidates: Any = None,
         clip: float | None = None,
         tally_resolution: float = 1e-3,
+        predict_with: str = "auto",
     ) -> None:
         self.estimator = estimator
         self.method = method
@@ -219,6 +278,11 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         self.candidates = candidates
         self.clip = clip
         self.tally_resolution = tally_resolution
+        self.predict_with = predict_with
+
+    #: the fold models are kept through ``fit`` (read by ``_heldout._cross_fit``): the refit
+    #: check compares them with the refitted model; they stay only when they predict
+    _keep_fold_models = True
 
     # -- fitting ---------------------------------------------------------------------------
     def fit(self, X: Any, y: Any, sample_weight: Any = None, **fit_params: Any) -> CalibrationWrapper:
@@ -239,14 +303,24 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         -------
         self
         """
+        if not isinstance(self.predict_with, str) or self.predict_with not in _PREDICT_WITH:
+            raise ValueError(
+                f"`predict_with` must be one of {_PREDICT_WITH}; got {plain(self.predict_with)!r}."
+            )
         self._check_method()
         if _multiclass_dask(self.estimator, X, y, sample_weight):
             return self._fit_multiclass_dask(X, y, sample_weight)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
-        return self._fit_on_heldout(ho)
+        self._fit_on_heldout(ho)
+        self._choose_predicting_models(X, ho)
+        return self
 
     def _fit_on_heldout(self, ho: Any) -> CalibrationWrapper:
         """The calibration map (and ``method="auto"``'s choice) on held-out predictions."""
+        self.predicted_with_ = "frozen" if ho.n_folds == 0 else "refit"
+        self.fold_models_ = []
+        self.refit_spread_ratios_ = np.empty(0)
+        self.fold_spread_variation_ = np.nan
         self.response_ = ho.response
         self._cross_fitted = ho.n_folds > 0
         self.clip_ = self._choose_clip(ho.values, ho.sample_weight)
@@ -297,6 +371,93 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         self._warn_reversed(len(ho.y_index))
         return self
 
+    # -- which model predicts ---------------------------------------------------------------
+    def _check_scores(self, values: np.ndarray) -> np.ndarray:
+        """Scores for the refit check, shape (n, 1) or (n, k): what a parametric map sees
+        (log-odds clipped at ``clip_``, log-probabilities floored at ``log(clip_)``, or the
+        decision values), multiclass ones centred per row."""
+        s = self._to_scores(values)
+        if self.response_ != "decision_function":
+            clip = self._clip_value()
+            if s.ndim == 1:
+                bound = np.log1p(-clip) - np.log(clip)
+                s = np.clip(s, -bound, bound)
+            else:
+                s = np.maximum(s, np.log(clip))
+        if s.ndim == 1:
+            return s[:, None]
+        return s - s.mean(axis=1, keepdims=True)
+
+    def _choose_predicting_models(self, X: Any, ho: Any) -> None:
+        """After a cross-fit: the spread of each fold model's scores on the labelled rows against
+        the refitted model's (``refit_spread_ratios_``), and which models predict."""
+        models = getattr(self, "_fold_models", None)
+        self._fold_models = None
+        if ho.n_folds == 0 or not models:
+            return
+        response = self.response_
+        n = ho.y_index.shape[0]
+        if n > _SPREAD_CHECK_MAX_ROWS:  # evenly spaced rows: the check's cost stays bounded
+            X = _safe_indexing(indexable(X)[0],
+                               np.linspace(0, n - 1, _SPREAD_CHECK_MAX_ROWS).astype(np.intp))
+        spreads = []
+        complete = True
+        for model, fold_classes in [(self.estimator_, self.classes_), *models]:
+            out = np.asarray(getattr(model, response)(X), dtype=float)
+            complete &= fold_classes.shape[0] == self.classes_.shape[0]
+            s = self._check_scores(fold_columns(fold_classes, out, self.classes_, response))
+            sd = float(np.sqrt(np.mean(s.var(axis=0))))
+            # a model that scores every row alike (up to rounding) has no spread
+            spreads.append(sd if sd > 1e-9 * max(1.0, float(np.abs(s).max())) else 0.0)
+        refit_sd, fold_sd = spreads[0], np.asarray(spreads[1:])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratios = np.where(fold_sd > 0.0, refit_sd / fold_sd, 1.0 if refit_sd == 0.0 else np.inf)
+            ratios = np.where((fold_sd == 0.0) & (refit_sd == 0.0), 1.0, ratios)
+        self.refit_spread_ratios_ = ratios
+        if np.all(fold_sd == 0.0):
+            unstable = 0.0  # every fold model (and so the map's input) is constant
+        elif np.any(fold_sd == 0.0):
+            unstable = np.inf
+        else:
+            unstable = float(np.std(np.log(fold_sd)))
+        self.fold_spread_variation_ = unstable
+        off = unstable > FOLD_SPREAD_VARIATION_LIMIT
+        if self.predict_with == "fold_models" or (self.predict_with == "auto" and off
+                                                   and complete):
+            self.predicted_with_ = "fold_models"
+            self.fold_models_ = [model for model, _ in models]
+            self._fold_classes = [fold_classes for _, fold_classes in models]
+        elif self.predict_with == "refit" and off:
+            warnings.warn(
+                "CalibrationWrapper(predict_with='refit'): the fold models score the labelled "
+                "rows on scales that differ from fold to fold (standard deviation of the log "
+                f"of their spreads {unstable:.3g}, above {FOLD_SPREAD_VARIATION_LIMIT:g}; "
+                "spread of the refitted model over each fold model's: "
+                f"{np.round(ratios, 2).tolist()}), so the map fitted on their pooled held-out "
+                "scores may not suit the model refitted on all rows, whose scale is one more "
+                "draw. predict_with='auto' or 'fold_models' predicts with the fold models.",
+                UserWarning,
+                stacklevel=3,
+            )
+
+    def _score_sets(self, X: Any) -> list[np.ndarray]:
+        """The scores the map turns into probabilities: the refitted (or frozen) model's, or
+        each fold model's."""
+        check_fitted(self, "calibrator_")
+        if getattr(self, "predicted_with_", "refit") != "fold_models":
+            return [self._to_scores(self._inner_output(X, self.response_))]
+        out = []
+        for model, fold_classes in zip(self.fold_models_, self._fold_classes, strict=True):
+            values = np.asarray(getattr(model, self.response_)(X), dtype=float)
+            if not np.all(np.isfinite(values)):
+                raise ValueError(
+                    f"A fold model returned NaN or infinite values from {self.response_} for "
+                    "`X`."
+                )
+            values = fold_columns(fold_classes, values, self.classes_, self.response_)
+            out.append(self._to_scores(values))
+        return out
+
     def _warn_few_class_rows(self, counts: np.ndarray) -> None:
         """Warn, naming each class and its count, when a class has at least one but fewer than
         ``FEW_CLASS_ROWS`` held-out rows of weight > 0 (``counts``, per class: rows, not
@@ -342,6 +503,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             # client, so the map is the in-memory fit of the same rows
             return self._fit_on_heldout(fitted)
         self.calibrator_ = fitted
+        self.predicted_with_, self.fold_models_ = "frozen", []
+        self.refit_spread_ratios_, self.fold_spread_variation_ = np.empty(0), np.nan
         return self
 
     def _check_method(self) -> None:
@@ -666,9 +829,11 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
 
     # -- prediction ----------------------------------------------------------------------------
     def _calibrated(self, X: Any) -> np.ndarray:
-        check_fitted(self, "calibrator_")
-        values = self._inner_output(X, self.response_)
-        return self._apply_map(self.calibrator_, self._to_scores(values))
+        sets = self._score_sets(X)
+        total = self._apply_map(self.calibrator_, sets[0])
+        for scores in sets[1:]:
+            total = total + self._apply_map(self.calibrator_, scores)
+        return total / len(sets) if len(sets) > 1 else total
 
     def predict_proba(self, X: Any) -> np.ndarray:
         """Calibrated class probabilities, shape (n, n_classes), rows summing to one.
@@ -697,8 +862,10 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             shape (n, n_classes, 2), the one-vs-rest interval of each class before
             renormalisation.
         """
-        check_fitted(self, "calibrator_")
-        scores = self._to_scores(self._inner_output(X, self.response_))
+        sets = self._score_sets(X)
+        return sum(self._interval(scores) for scores in sets) / len(sets)
+
+    def _interval(self, scores: np.ndarray) -> np.ndarray:
         if scores.ndim == 1:
             return self.calibrator_.predict_interval(scores)
         ovr = self._one_vs_rest_scores(scores)
