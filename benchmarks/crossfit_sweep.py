@@ -36,6 +36,16 @@ linearmodels sets of ``benchmarks/study_data_sweep.py`` (the same extra). Base m
 regression and a linear SVM (margins) on standardised features, Gaussian naive Bayes, a random
 forest and gradient boosting.
 
+``--only fold-check`` measures ``CalibrationWrapper(predict_with=...)`` (nineteenth session):
+on scikit-learn's and statsmodels' bundled sets (eight binary tasks, iris and wine), 30, 60,
+150 and 400 training rows, two draws, eight base models (logistic regression, SGD with log
+loss and with hinge loss (margins), an RBF SVM's margins, a forest, gradient boosting, naive
+Bayes, 15 nearest neighbours), one fit per cell gives the test log loss of the refitted model
+(``refit``) and of the fold models (``fold_models``) behind the same map, and the refit check's
+statistic (``fold_spread_variation_``); ``auto`` is read from them for each limit; beside scikit-learn's
+``CalibratedClassifierCV(model, method="sigmoid")``. ``--out FILE`` keeps the cells as JSON;
+``--sets wide`` (or another group above) runs the same on that group's sets instead.
+
 ``--only cost-multiclass`` does the same on the sets with more than two classes (errors on
 true class j cost j + 1): ``CostPolicyWrapper(model, C, strategy="tuned")``, the Bayes rule
 on ``CalibrationWrapper(model)``, the Bayes rule on the model's own probabilities and the
@@ -369,7 +379,173 @@ def cost_multiclass_main(argv: list[str]) -> None:
     _print_cost_ratios(cells, pairs)
 
 
+def fold_check_sets():
+    """Eight binary tasks and two multiclass ones from scikit-learn's and statsmodels' bundled
+    sets (the eighteenth session's tasks, docs/small_data.md)."""
+    import statsmodels.api as sm
+    from sklearn.datasets import (
+        load_breast_cancer,
+        load_diabetes,
+        load_digits,
+        load_iris,
+        load_wine,
+    )
+
+    X, y = load_breast_cancer(return_X_y=True)
+    yield "breast_cancer", X, y
+    X, y = load_wine(return_X_y=True)
+    yield "wine class 0", X, (y == 0).astype(int)
+    yield "wine", X, y
+    X, y = load_iris(return_X_y=True)
+    yield "iris", X, y
+    X, y = load_digits(return_X_y=True)
+    yield "digits 8", X, (y == 8).astype(int)
+    X, y = load_diabetes(return_X_y=True)
+    yield "diabetes>median", X, (y > np.median(y)).astype(int)
+    d = sm.datasets.fair.load_pandas().data
+    yield "fair affair", d.drop(columns="affairs").to_numpy(float), \
+        (d.affairs > 0).astype(int).to_numpy()
+    d = sm.datasets.star98.load_pandas().data
+    yield "star98 pass>40%", d.iloc[:, 2:].to_numpy(float), \
+        (d.iloc[:, 0] / (d.iloc[:, 0] + d.iloc[:, 1]) > 0.4).astype(int).to_numpy()
+    d = sm.datasets.anes96.load_pandas().data
+    yield "anes96 vote", d.drop(columns=["vote"]).to_numpy(float), d.vote.astype(int).to_numpy()
+    d = sm.datasets.randhie.load_pandas().data
+    yield "randhie visits>2", d.drop(columns="mdvis").to_numpy(float), \
+        (d.mdvis > 2).astype(int).to_numpy()
+
+
+def fold_check_models() -> dict:
+    from sklearn.linear_model import SGDClassifier
+    from sklearn.neighbors import KNeighborsClassifier
+    from sklearn.svm import SVC
+
+    def scaled(m):
+        return make_pipeline(StandardScaler(), m)
+
+    return {
+        "logistic": scaled(LogisticRegression(max_iter=2000)),
+        "sgd_log": scaled(SGDClassifier(loss="log_loss", random_state=0)),
+        "sgd_hinge": scaled(SGDClassifier(random_state=0)),
+        "svc_margins": scaled(SVC()),
+        "forest": RandomForestClassifier(n_estimators=50, random_state=0),
+        "boosting": HistGradientBoostingClassifier(max_iter=50, random_state=0),
+        "naive_bayes": GaussianNB(),
+        "knn15": scaled(KNeighborsClassifier(15)),
+    }
+
+
+def fold_check_cell(model, X, y, tr, te) -> dict:
+    """Test log loss of the refitted model and of the fold models behind one fitted map, the
+    refit check's statistic, and scikit-learn's sigmoid (fold ensemble)."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        pw = CalibrationWrapper(clone(model), predict_with="fold_models", random_state=0)
+        pw.fit(X[tr], y[tr])
+        folds = pw.predict_proba(X[te])
+        refit = copy.copy(pw)
+        refit.predicted_with_ = "refit"
+        loss = {"refit": test_log_loss(refit.predict_proba(X[te]), y[te]),
+                "fold_models": test_log_loss(folds, y[te])}
+        try:
+            loss["sk_sigmoid"] = test_log_loss(CalibratedClassifierCV(
+                clone(model), method="sigmoid", cv=5).fit(X[tr], y[tr]).predict_proba(X[te]),
+                y[te])
+        except ValueError:
+            pass
+    # the fold models' disagreement on the training rows, after the map: the mean over rows
+    # (and classes) of the spread across fold models of the centred calibrated log-probabilities
+    logq = np.stack([np.log(np.clip(pw._apply_map(pw.calibrator_, s), 1e-12, 1.0))
+                     for s in pw._score_sets(X[tr])])
+    logq -= logq.mean(axis=2, keepdims=True)
+    refit_logq = np.log(np.clip(refit.predict_proba(X[tr]), 1e-12, 1.0))
+    refit_logq -= refit_logq.mean(axis=1, keepdims=True)
+    disagreement = float(logq.std(axis=0).mean())
+    refit_gap = float(np.abs(refit_logq - logq.mean(axis=0)).mean())
+    return {"loss": loss, "method": pw.method_,
+            "variation": pw.fold_spread_variation_,
+            "disagreement": disagreement, "refit_gap": refit_gap,
+            "ratios": pw.refit_spread_ratios_.round(3).tolist()}
+
+
+def fold_check_summary(cells: list, limits=(0.05, 0.075, 0.1, 0.15, 0.2, 0.3)):
+    tiny = 1e-6
+
+    def gm(r):
+        return float(np.exp(np.mean(np.log(r))))
+
+    def pick(c, lim):
+        return c["loss"]["fold_models"] if c["variation"] > lim else c["loss"]["refit"]
+
+    cells = [c for c in cells if "sk_sigmoid" in c["loss"]]
+    for rows in sorted({c["rows"] for c in cells}) + [None]:
+        keep = [c for c in cells if rows is None or c["rows"] == rows]
+        sk = np.array([c["loss"]["sk_sigmoid"] + tiny for c in keep])
+        ref = np.array([c["loss"]["refit"] + tiny for c in keep])
+        fol = np.array([c["loss"]["fold_models"] + tiny for c in keep])
+        print(f"\n{'all cells' if rows is None else f'{rows} training rows'} ({len(keep)} cells):"
+              " test log loss over scikit-learn's sigmoid, geometric mean | worst | cells above "
+              "1.10; over refit: geometric mean | worst | cells above 1.02")
+        print(f"  {'refit':>16} {gm(ref / sk):6.3f} | {np.max(ref / sk):6.3f} | "
+              f"{int(np.sum(ref / sk > 1.10)):3d}")
+        print(f"  {'fold_models':>16} {gm(fol / sk):6.3f} | {np.max(fol / sk):6.3f} | "
+              f"{int(np.sum(fol / sk > 1.10)):3d}   {gm(fol / ref):6.3f} | "
+              f"{np.max(fol / ref):6.3f} | {int(np.sum(fol / ref > 1.02))}")
+        for lim in limits:
+            a = np.array([pick(c, lim) + tiny for c in keep])
+            used = sum(c["variation"] > lim for c in keep)
+            print(f"  {f'auto at {lim:g}':>16} {gm(a / sk):6.3f} | {np.max(a / sk):6.3f} | "
+                  f"{int(np.sum(a / sk > 1.10)):3d}   {gm(a / ref):6.3f} | {np.max(a / ref):6.3f}"
+                  f" | {int(np.sum(a / ref > 1.02))}   (fold models in {used})")
+    print("\nby model, all sizes: refit / sk, fold_models / sk, fold_models / refit (gmean)")
+    for m in sorted({c["model"] for c in cells}):
+        keep = [c for c in cells if c["model"] == m]
+        r = [(c["loss"]["refit"] + tiny) / (c["loss"]["sk_sigmoid"] + tiny) for c in keep]
+        f = [(c["loss"]["fold_models"] + tiny) / (c["loss"]["sk_sigmoid"] + tiny) for c in keep]
+        print(f"  {m:>12} {gm(r):6.3f} {gm(f):6.3f} {gm(np.array(f) / np.array(r)):6.3f} "
+              f"median variation {np.median([c['variation'] for c in keep]):.3f}")
+
+
+def fold_check_main(argv: list[str]) -> None:
+    """``--only fold-check``: refit against fold models behind the same map (see above)."""
+    import json
+
+    seeds = (0, 1) if "--seed" not in argv else (int(argv[argv.index("--seed") + 1]),)
+    sizes = (30, 60, 150, 400)
+    which = argv[argv.index("--sets") + 1] if "--sets" in argv else None
+    cells = []
+    for name, X, y in fold_check_sets() if which is None else data(which, False):
+        X = np.asarray(X, dtype=float)
+        _, yi = np.unique(np.asarray(y), return_inverse=True)
+        k = int(yi.max()) + 1
+        for seed in seeds:
+            for n_train in sizes:
+                if len(yi) < n_train + 100:
+                    continue
+                idx = np.random.default_rng(seed).permutation(len(yi))
+                tr, te = idx[:n_train], idx[n_train:][:2000]
+                if np.bincount(yi[tr], minlength=k).min() < 5:
+                    continue
+                for mname, model in fold_check_models().items():
+                    try:
+                        c = fold_check_cell(model, X, yi, tr, te)
+                    except Exception as exc:  # noqa: BLE001 - counted and shown
+                        print(f"CRASH {name} | {mname} | {n_train}: {type(exc).__name__}: {exc}")
+                        continue
+                    c.update({"set": name, "model": mname, "rows": n_train, "seed": seed})
+                    cells.append(c)
+                    print(f"{name} | {mname} | {n_train} | seed {seed} | {c['method']} | "
+                          f"variation {c['variation']:.3f}: "
+                          + ", ".join(f"{a} {b:.4f}" for a, b in c["loss"].items()), flush=True)
+    if "--out" in argv:
+        Path(argv[argv.index("--out") + 1]).write_text(json.dumps(cells))
+    fold_check_summary(cells)
+
+
 def main(argv: list[str]) -> None:
+    if "--only" in argv and argv[argv.index("--only") + 1] == "fold-check":
+        fold_check_main(argv)
+        return
     if "--only" in argv and argv[argv.index("--only") + 1] == "cost":
         cost_main(argv)
         return
