@@ -11,8 +11,8 @@ Per cell (data set, base model, training rows) it records the test log loss of
 * ``pw``: ``CalibrationWrapper(model)`` with its defaults (``method="auto"``, five stratified
   folds: the map is fitted on the out-of-fold predictions, and the model refitted on all rows
   predicts);
-* ``pw_folds``: a measured proposal, not an option of the wrapper: the same fitted map applied to
-  each of the five fold models (those whose out-of-fold predictions the map was fitted on) and the
+* ``pw_folds``: the eleventh session's proposal (now ``predict_with="fold_models"``, measured
+  with ``--only fold-check``): the same fitted map applied to each of the five fold models (those whose out-of-fold predictions the map was fitted on) and the
   five calibrated probabilities averaged. It is built here from the fitted wrapper (its
   ``estimator_`` swapped for each fold model on a shallow copy), with the wrapper's folds
   (``StratifiedKFold(5)``);
@@ -141,6 +141,7 @@ def one_cell(model, X, y, tr, te, isotonic: bool, methods: bool = False) -> tupl
         total = np.zeros_like(out["pw"])
         for fit_rows, _ in StratifiedKFold(5).split(X[tr], y[tr]):
             member = copy.copy(pw)
+            member.predicted_with_ = "refit"  # the swapped estimator_ below predicts
             member.estimator_ = clone(model).fit(X[tr][fit_rows], y[tr][fit_rows])
             total += member.predict_proba(X[te])
         out["pw_folds"] = total / 5
