@@ -11,7 +11,7 @@ Per cell (data set, base model, training rows) it records the test log loss of
 * ``pw``: ``CalibrationWrapper(model)`` with its defaults (``method="auto"``, five stratified
   folds: the map is fitted on the out-of-fold predictions, and the model refitted on all rows
   predicts);
-* ``pw_folds``: the eleventh session's proposal (now ``predict_with="fold_models"``, measured
+* ``pw_folds``: the twelfth session's proposal (now ``predict_with="fold_models"``, measured
   with ``--only fold-check``): the same fitted map applied to each of the five fold models (those whose out-of-fold predictions the map was fitted on) and the
   five calibrated probabilities averaged. It is built here from the fitted wrapper (its
   ``estimator_`` swapped for each fold model on a shallow copy), with the wrapper's folds
