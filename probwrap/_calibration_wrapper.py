@@ -434,7 +434,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             self.predicted_with_ = "fold_models"
             self.fold_models_ = [model for model, _ in models]
             self._fold_classes = [fold_classes for _, fold_classes in models]
-        elif self.predict_with == "refit" and off:
+        elif self.predict_with == "refit" and off and complete:
+            # (a fold model without some class scores it far below the rest, which is not a
+            # scale of its own: that case has the absent-class warning of the cross-fit)
             warnings.warn(
                 "CalibrationWrapper(predict_with='refit'): the fold models score the labelled "
                 "rows on scales that differ from fold to fold (standard deviation of the log "
