@@ -112,3 +112,27 @@ def test_binning_integer_weights_still_equal_duplicated_rows():
     b = BinningMap().fit(np.repeat(s, w), np.repeat(yy, w))
     np.testing.assert_array_equal(a.edges_, b.edges_)
     np.testing.assert_allclose(a.predict(s), b.predict(s), rtol=1e-12)
+
+
+@pytest.mark.parametrize("method", ["platt", "isotonic", "beta"])
+def test_normalised_weights_warn_once_not_twice(method):
+    # The wrapper rescales weights that sum to less than the rows to Kish's (1965) effective
+    # size and warns; the map then received weights already on that scale (their sum is
+    # Kish's size, below the rows) and, before 4 December 2026, warned a second time.
+    X, y = load_breast_cancer(return_X_y=True)
+    w = np.random.default_rng(0).uniform(0.5, 2.0, y.size)
+    w /= w.sum()
+    model = make_pipeline(StandardScaler(), LogisticRegression(max_iter=5000))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        CalibrationWrapper(model, method=method, cv=3).fit(X, y, sample_weight=w)
+    scale = [c for c in caught if "cannot be row frequencies" in str(c.message)]
+    assert len(scale) == 1, [str(c.message) for c in scale]
+    assert str(scale[0].message).startswith("CalibrationWrapper:")
+    # the map on its own still warns: it is the first to rescale there
+    from probwrap.calibration import PlattMap
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        PlattMap().fit(np.linspace(-2, 2, y.size), y, sample_weight=w)
+    assert sum("cannot be row frequencies" in str(c.message) for c in caught) == 1

@@ -147,7 +147,12 @@ def count_weights(w: np.ndarray) -> tuple[np.ndarray, bool]:
         return w, False
     # scale first so that the sum of squares cannot underflow for tiny weights
     u = w / w.max()
-    return u * (u.sum() / (u @ u)), True
+    out = u * (u.sum() / (u @ u))
+    if np.allclose(out, w, rtol=1e-12, atol=0.0):
+        # already on Kish's scale (a wrapper rescaled them before handing them on): nothing
+        # changes, so nothing is said twice
+        return w, False
+    return out, True
 
 
 def rule_of_succession_targets(y: np.ndarray, w: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
