@@ -26,6 +26,7 @@ __all__ = [
     "plain",
     "row_sum",
     "row_max",
+    "shared_factor",
 ]
 
 
@@ -375,3 +376,23 @@ def power_of_two_unit(values: Any) -> float:
     if top == 0.0 or not math.isfinite(top):
         return 1.0
     return math.ldexp(1.0, math.frexp(top)[1] - 1)
+
+
+def shared_factor(w: np.ndarray) -> int | None:
+    """The largest whole number dividing every positive weight, or None when some positive
+    weight is not a whole number (or beyond 2**53, where doubles hold no fractions).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap._validation import shared_factor
+    >>> shared_factor(np.array([3000.0, 1000.0, 0.0, 2000.0])), shared_factor(np.array([1.5, 2.0]))
+    (1000, None)
+    """
+    positive = np.asarray(w, dtype=float)
+    positive = positive[positive > 0]
+    if not positive.size or not np.all(positive == np.round(positive)):
+        return None
+    if float(positive.max()) >= 2.0**53:
+        return None
+    return int(np.gcd.reduce(positive.astype(np.int64)))

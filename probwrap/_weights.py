@@ -13,6 +13,7 @@ import warnings
 
 import numpy as np
 
+from ._validation import shared_factor
 from .calibration._base import WeightScaleWarning, count_weights
 
 __all__ = ["count_scale_weights", "shared_factor", "warn_count_reading"]
@@ -45,25 +46,6 @@ def count_scale_weights(w: np.ndarray, owner: str, what: str, *, stacklevel: int
             stacklevel=stacklevel,
         )
     return out
-
-
-def shared_factor(w: np.ndarray) -> int | None:
-    """The largest whole number dividing every positive weight, or None when some positive
-    weight is not a whole number (or beyond 2**53, where doubles hold no fractions).
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> shared_factor(np.array([3000.0, 1000.0, 0.0, 2000.0])), shared_factor(np.array([1.5, 2.0]))
-    (1000, None)
-    """
-    positive = np.asarray(w, dtype=float)
-    positive = positive[positive > 0]
-    if not positive.size or not np.all(positive == np.round(positive)):
-        return None
-    if float(positive.max()) >= 2.0**53:
-        return None
-    return int(np.gcd.reduce(positive.astype(np.int64)))
 
 
 def warn_count_reading(

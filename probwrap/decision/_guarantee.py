@@ -38,7 +38,7 @@ from typing import Any
 import numpy as np
 from scipy import special
 
-from .._validation import check_sample_weight, check_scores, plain
+from .._validation import check_sample_weight, check_scores, plain, shared_factor
 from ._cutoff import CutoffSearchResult, _binary_targets, search_cutoff
 
 __all__ = [
@@ -226,10 +226,9 @@ def counts_as_rows(w: np.ndarray, owner: str | None = None) -> bool:
     """
     if not np.all(w == np.round(w)):
         return False
-    positive = w[w > 0]
-    if owner is not None and positive.size and float(positive.max()) < 2.0**53:
-        factor = int(np.gcd.reduce(positive.astype(np.int64)))
-        if factor > 1:
+    if owner is not None:
+        factor = shared_factor(w)
+        if factor is not None and factor > 1:
             from ..calibration._base import WeightScaleWarning
 
             warnings.warn(
