@@ -179,6 +179,32 @@ def plain(value: Any) -> Any:
     return value
 
 
+def cutoff_text(value: float, spec: str = ".6g") -> str:
+    """``value`` formatted with ``spec``, except that a number strictly between 0 and 1 whose
+    text would read as exactly 0 or 1 keeps two significant digits of its distance from that
+    end.
+
+    A cutoff of 0.9999999981 on probabilities printed as ``1`` (or ``1.0000``) reads as
+    "act when the probability exceeds 1", a rule that acts on no row; the rows above it are
+    there.
+
+    Examples
+    --------
+    >>> from probwrap._validation import cutoff_text
+    >>> cutoff_text(0.9999999980881329), cutoff_text(2.04e-5, ".4f"), cutoff_text(0.31, ".4f")
+    ('0.9999999981', '0.000020', '0.3100')
+    """
+    v = float(value)
+    text = format(v, spec)
+    if 0.0 < v < 1.0 and float(text) in (0.0, 1.0):
+        gap = min(v, 1.0 - v)
+        # decimals that keep two significant digits of the distance to the end (at most 17)
+        decimals = int(np.ceil(-np.log10(gap))) + 1
+        # (a number nearer 0 than 17 decimals show: in powers of ten)
+        text = f"{v:.{decimals}f}" if decimals <= 17 else f"{v:.2g}"
+    return text
+
+
 def _type_kind(t: type) -> str:
     if issubclass(t, (numbers.Number, np.bool_)):
         return "number"

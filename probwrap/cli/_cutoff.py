@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import power_of_two_unit
+from .._validation import cutoff_text, power_of_two_unit
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
@@ -284,12 +284,13 @@ def _text(out: dict[str, Any], path: str) -> str:
         + (f" (label {shown(out['labels']['positive'])})" if "labels" in out else ""),
         f"  costs                 {costs}"
         + (f"; capacity {out['capacity']:g} of rows" if out["capacity"] is not None else ""),
-        f"  cutoff                {out['cutoff']:.6g}   (act when score > cutoff)",
-        f"  same cost for         [{out['cutoff_range'][0]:.6g}, {out['cutoff_range'][1]:.6g}"
+        f"  cutoff                {cutoff_text(out['cutoff'])}   (act when score > cutoff)",
+        f"  same cost for         [{cutoff_text(out['cutoff_range'][0])}, "
+        f"{cutoff_text(out['cutoff_range'][1])}"
         # a range that reaches 1 for probabilities includes 1 (no row scores above it)
         + ("]" if out["score_scale"] == "proba" and out["cutoff_range"][1] >= 1.0 else ")"),
-        f"  {level}% interval          [{out['cutoff_interval'][0]:.6g}, "
-        f"{out['cutoff_interval'][1]:.6g}]   (bootstrap, {out['n_resamples']} resamples"
+        f"  {level}% interval          [{cutoff_text(out['cutoff_interval'][0])}, "
+        f"{cutoff_text(out['cutoff_interval'][1])}]   (bootstrap, {out['n_resamples']} resamples"
         + ("; widened to the same-cost range)" if out.get("cutoff_interval_widened") else ")")
         if out["cutoff_interval"] is not None else "  interval              not computed (--resamples 0)",
         f"  expected cost per row {out['expected_cost']:.6g}",
@@ -311,7 +312,7 @@ def _text(out: dict[str, Any], path: str) -> str:
         lines += [
             f"  with the guarantee    {g['requirement'].replace('_', ' ')} {side} {g['target']:g} "
             f"({how})",
-            f"    cutoff              {g['cutoff']:.6g}"
+            f"    cutoff              {cutoff_text(g['cutoff'])}"
             + ("" if g["moved_the_cutoff"] else "   (the same rule as without it)"),
             f"    expected cost/row   {g['expected_cost']:.6g}",
             f"    on these rows       {g['achieved']:.4g}; guaranteed {side} {g['bound']:.4g}",
@@ -339,7 +340,7 @@ def _text(out: dict[str, Any], path: str) -> str:
                    if kept["kept_recalibrated_bayes_cutoff"] else
                    f"nearest {target} among those not shown at 5 % to cost more")
             lines.append(
-                f"  kept by CostPolicyWrapper {kept['cutoff']:.6g}   cost {kept['expected_cost']:.6g}"
+                f"  kept by CostPolicyWrapper {cutoff_text(kept['cutoff'])}   cost {kept['expected_cost']:.6g}"
                 f"   ({why})"
             )
     return "\n".join(lines)

@@ -10,7 +10,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import plain
+from .._validation import cutoff_text, plain
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     MIN_RESAMPLES,
@@ -568,13 +568,13 @@ def _handler(args: argparse.Namespace) -> int:
         summary["cutoff"] = float(content.chosen_cutoff)
         rec = getattr(content, "recommendation", None)
         if rec is None or rec.cutoff == content.chosen_cutoff:
-            line += f", cutoff {content.chosen_cutoff:.4f}"
+            line += f", cutoff {cutoff_text(content.chosen_cutoff, '.4f')}"
         else:
             # the page recommends another cutoff than the least-cost one (the settled or Bayes
             # cutoff, a capacity or a new prevalence): say both, the recommendation first
             summary["recommended_cutoff"] = float(rec.cutoff)
-            line += (f", recommended cutoff {rec.cutoff:.4f} ({rec.name}; least-cost cutoff "
-                     f"{content.chosen_cutoff:.4f} on these rows)")
+            line += (f", recommended cutoff {cutoff_text(rec.cutoff, '.4f')} ({rec.name}; "
+                     f"least-cost cutoff {cutoff_text(content.chosen_cutoff, '.4f')} on these rows)")
     if content.target_prevalence is not None:
         summary.update(source_prevalence=float(content.source_prevalence),
                        target_prevalence=float(content.target_prevalence),

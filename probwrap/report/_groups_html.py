@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from ._html_parts import _text
+from ._html_parts import _cut, _text
 
 __all__ = ["group_section"]
 
@@ -50,7 +50,7 @@ def group_section(c: Any) -> str:
         f"{_text(str(x.highest))}, lowest {_text(str(x.lowest))}{gap_interval_text(x)})</li>"
         for x in checks.gaps
     )
-    rule = (f" The decision columns are for the rule &ldquo;act when p &gt; {checks.cutoff:.4f}"
+    rule = (f" The decision columns are for the rule &ldquo;act when p &gt; {_cut(checks.cutoff)}"
             "&rdquo;." if decision else "")
     notes = "".join(f"<p>{_text(n)}</p>" for n in checks.notes)
     return (

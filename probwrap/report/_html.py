@@ -19,8 +19,10 @@ from ._general_groups import multiclass_group_section
 from ._general_html import general_figures, general_glance, general_sections
 from ._groups_html import group_section
 from ._html_parts import (
+    _cut,
     _figure,
     _num,
+    _num_cut,
     _share,
     _text,
     ece_note,
@@ -131,14 +133,14 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
         parts.append(
             f'<p id="chosen-rule">Highlighted below: <b>{a1}</b> when the probability exceeds '
             f"the {_text(c.chosen_name)} "
-            f'<b data-value="{c.chosen_cutoff!r}">{c.chosen_cutoff:.4f}</b>, '
+            f'<b data-value="{c.chosen_cutoff!r}">{_cut(c.chosen_cutoff)}</b>, '
             f"{_text(c.cutoff_source)}; {cap}."
         )
         if c.chosen_interval is not None:
             span = (
                 f'<span id="cutoff-interval" data-low="{c.chosen_interval[0]!r}" '
                 f'data-high="{c.chosen_interval[1]!r}" data-cutoff="{c.interval_cutoff!r}">'
-                f"{c.chosen_interval[0]:.4f} to {c.chosen_interval[1]:.4f}</span>"
+                f"{_cut(c.chosen_interval[0])} to {_cut(c.chosen_interval[1])}</span>"
             )
             if c.interval_cutoff is None or c.interval_cutoff == c.chosen_cutoff:
                 parts.append(f" Its {c.confidence_level:.0%} bootstrap interval is {span}.")
@@ -147,7 +149,7 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
                 # least-cost cutoff to cost less: the interval is the least-cost cutoff's
                 parts.append(
                     f" The {c.confidence_level:.0%} bootstrap interval of the "
-                    f"{_text(c.interval_name)} ({c.interval_cutoff:.4f}) is {span}. It is "
+                    f"{_text(c.interval_name)} ({_cut(c.interval_cutoff)}) is {span}. It is "
                     f"not an interval of the {_text(c.chosen_name)}: that one moves from the "
                     f"{BAYES_NAME} only as far as the held-out rows show a cost saving, and can "
                     "lie outside it."
@@ -178,7 +180,7 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
             cls = (' class="pw-chosen pw-recommended"' if rec and r.key == "chosen" else
                    ' class="pw-chosen"' if r.key == "chosen" else
                    ' class="pw-recommended"' if rec else "")
-            cells = [f"<td>{_text(r.label)}</td>", _num(r.cutoff), _num(r.mean_cost),
+            cells = [f"<td>{_text(r.label)}</td>", _num_cut(r.cutoff), _num(r.mean_cost),
                      _share(r.flagged_share)]
             if c.capacity is not None:
                 cells.append(f"<td>{'yes' if r.within_capacity else 'no'}</td>")
@@ -281,7 +283,7 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
             )
             + (
                 f'<tr data-item="adapted_cutoff"><td>{_text(c.chosen_name)}, moved to the '
-                f"applied prevalence</td>{_num(c.adapted_cutoff)}</tr>"
+                f"applied prevalence</td>{_num_cut(c.adapted_cutoff)}</tr>"
                 if c.adapted_cutoff is not None else ""
             )
             + "</tbody></table>"
@@ -390,9 +392,9 @@ def _glance(c: Any) -> str:
     items = [("labelled rows", f"{c.n_rows}"),
              (f"observed prevalence ({positive})", f"{c.prevalence:.4f}")]
     if c.recommendation is not None and c.recommendation.cutoff is not None:
-        items.append(("recommended cutoff", f"{c.recommendation.cutoff:.4f}"))
+        items.append(("recommended cutoff", _cut(c.recommendation.cutoff)))
     elif c.chosen_cutoff is not None:
-        items.append((c.chosen_name, f"{c.chosen_cutoff:.4f}"))
+        items.append((c.chosen_name, _cut(c.chosen_cutoff)))
     if c.target_prevalence is not None:
         items.append((f"estimated new prevalence ({positive})", f"{c.target_prevalence:.4f}"))
     li = "".join(f"<li>{_text(k)}<b>{_text(v)}</b></li>" for k, v in items)

@@ -9,6 +9,8 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import cutoff_text
+
 __all__ = ["figure_to_svg", "notes_box", "recommendation_box"]
 
 
@@ -33,12 +35,24 @@ def _fmt(v: float, digits: int = 4) -> str:
     return f"{v:.{digits}f}" if abs(v) < 1e9 else f"{v:.6g}"
 
 
+def _cut(value: float) -> str:
+    """A cutoff for the page: 4 decimals, more where those would read as exactly 0 or 1."""
+    return cutoff_text(value, ".4f")
+
+
 def _num(value: float | None, digits: int = 4) -> str:
     """A table cell holding a number, with the full value in ``data-value``."""
     if value is None or (isinstance(value, float) and not np.isfinite(value)):
         return '<td data-value="">&ndash;</td>'
     v = float(value)
     return f'<td data-value="{v!r}">{_fmt(v, digits)}</td>'
+
+
+def _num_cut(value: float | None) -> str:
+    """A table cell holding a cutoff (see :func:`_cut`), with the full value in ``data-value``."""
+    if value is None or (isinstance(value, float) and not np.isfinite(value)):
+        return _num(value)
+    return f'<td data-value="{float(value)!r}">{_cut(float(value))}</td>'
 
 
 def _share(value: float | None) -> str:
@@ -86,7 +100,7 @@ def recommendation_box(c: Any) -> str:
     if r.cutoff is not None:
         a1 = _text(c.action_names[1])
         rule = (f"&ldquo;{a1}&rdquo; when the probability exceeds <b id=\"recommended-cutoff\" "
-                f'data-value="{r.cutoff!r}">{r.cutoff:.4f}</b> ({_text(r.name)})')
+                f'data-value="{r.cutoff!r}">{_cut(r.cutoff)}</b> ({_text(r.name)})')
     share = (f'share acted on <b id="recommended-share" data-value="{r.acted_share!r}">'
              f"{100 * r.acted_share:.1f}%</b>")
     if r.action_shares is not None:

@@ -19,7 +19,7 @@ from typing import Any
 
 import numpy as np
 
-from ._html_parts import _text
+from ._html_parts import _cut, _text
 
 __all__ = ["GuaranteeSummary", "guarantee_summary", "guarantee_html", "resolve_late_labels",
            "late_label_html", "REQUIREMENT_WORDS"]
@@ -146,7 +146,7 @@ def guarantee_html(c: Any, n_columns: int) -> tuple[str, str]:
     text = (
         f'<p id="guarantee" data-status="certified">Guarantee ({_text(g.promise)}), certified '
         f"on {_text(g.where)}: at the cutoff "
-        f'<span id="guarantee-cutoff" data-value="{g.cutoff!r}">{g.cutoff:.4f}</span> the '
+        f'<span id="guarantee-cutoff" data-value="{g.cutoff!r}">{_cut(g.cutoff)}</span> the '
         f'{_text(words)} on those rows is <span id="guarantee-achieved" data-value="{g.achieved!r}">'
         f"{g.achieved:.4f}</span> and on new rows it is guaranteed {sign} "
         f'<span id="guarantee-bound" data-value="{g.bound!r}">{g.bound:.4f}</span>{pv} '
