@@ -71,6 +71,9 @@ def test_report_page_and_summary_keep_the_digits(capsys, scores_file, tmp_path):
     assert 1 - 1e-6 < exact < 1
     assert shown != "1.0000" and float(shown) < 1
     assert np.sum(p > float(shown)) == np.sum(p > exact)
+    # the cost figure's legend names the cutoff too (it read "... on these rows 1.000")
+    legends = re.findall(r"least-cost cutoff on these rows (\d\.\d+)", page)
+    assert legends and all(float(v) < 1 for v in legends), legends
     summary = re.search(r"cutoff (\d\.\d+)", line).group(1)
     assert summary != "1.0000" and float(summary) < 1
 

@@ -19,7 +19,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import plain
+from .._validation import cutoff_text, plain
 from ._common import DataError, clean, not_a_number, shown
 from ._tables import numeric_column
 
@@ -275,7 +275,7 @@ def promise_summary(content, summary: dict) -> str:
             "unreachable": g.unreachable,
         }
         line += (f", guarantee unreachable ({g.promise})" if g.unreachable is not None else
-                 f", guaranteed cutoff {g.cutoff:.4f} ({g.promise}; bound {g.bound:.4f})")
+                 f", guaranteed cutoff {cutoff_text(g.cutoff, '.4f')} ({g.promise}; bound {g.bound:.4f})")
     a = getattr(content, "alarm", None)
     if a is not None:
         res = a.result

@@ -6,6 +6,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import cutoff_text
 from ..decision import (
     check_cost_matrix,
     cutoff_interval,
@@ -275,19 +276,19 @@ class CostCurveDisplay:
         )
         self.chosen_line_ = ax.axvline(
             self.cutoff, color=PALETTE["chosen"], linewidth=1.4,
-            label=f"least cost cutoff {self.cutoff:.3f}",
+            label=f"least cost cutoff {cutoff_text(self.cutoff, '.3f')}",
         )
         self.settled_line_ = None
         if self.settled_cutoff is not None and self.settled_cutoff != self.cutoff:
             self.settled_line_ = ax.axvline(
                 self.settled_cutoff, color=PALETTE["chosen"], linestyle=(0, (1, 1)),
-                linewidth=1.6, label=f"settled cutoff {self.settled_cutoff:.3f}",
+                linewidth=1.6, label=f"settled cutoff {cutoff_text(self.settled_cutoff, '.3f')}",
             )
         self.plugin_line_ = None
         if self.plugin_cutoff is not None:
             self.plugin_line_ = ax.axvline(
                 self.plugin_cutoff, color=PALETTE["plugin"], linestyle=(0, (5, 2)),
-                linewidth=1.2, label=f"Bayes cutoff {self.plugin_cutoff:.3f}",
+                linewidth=1.2, label=f"Bayes cutoff {cutoff_text(self.plugin_cutoff, '.3f')}",
             )
         self.half_line_ = ax.axvline(0.5, color=PALETTE["half"], linestyle=":", linewidth=1.0,
                                      label="0.5 cutoff")

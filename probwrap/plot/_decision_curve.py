@@ -6,6 +6,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import cutoff_text
 from ..metrics import net_benefit, net_benefit_treat_all
 from ._common import binary_labels, estimator_classes, positive_proba
 from ._style import PALETTE, new_axes, style_axes
@@ -155,7 +156,7 @@ class DecisionCurveDisplay:
         if self.marked_threshold is not None:
             self.marked_line_ = ax.axvline(
                 self.marked_threshold, color=PALETTE["chosen"], linewidth=1.1,
-                label=f"cutoff in use {self.marked_threshold:.3f}",
+                label=f"cutoff in use {cutoff_text(self.marked_threshold, '.3f')}",
             )
         top = float(np.nanmax(np.concatenate([self.net_benefit, self.treat_all, [0.0]])))
         span = max(top, 1e-3)

@@ -13,6 +13,7 @@ from typing import Any
 
 import numpy as np
 
+from .._validation import cutoff_text
 from ..metrics import (
     expected_calibration_error,
     net_benefit,
@@ -150,10 +151,10 @@ def cost_svg(result: Any, *, chosen_cutoff: float | None = None, interval: Any =
     panel.line(cutoffs, np.where(admissible, costs, np.nan), color=PALETTE["observed"],
                width=1.6, label="mean cost per row", name="curve")
     panel.vline(chosen, color=PALETTE["chosen"], width=1.4, name="chosen",
-                label=f"{chosen_name} {chosen:.3f}")
+                label=f"{chosen_name} {cutoff_text(chosen, '.3f')}")
     if plugin is not None:
         panel.vline(float(plugin), color=PALETTE["plugin"], width=1.2, dash=(5, 2),
-                    name="plugin", label=f"Bayes cutoff {plugin:.3f}")
+                    name="plugin", label=f"Bayes cutoff {cutoff_text(plugin, '.3f')}")
     panel.vline(0.5, color=PALETTE["half"], width=1.0, dash="dotted", name="half",
                 label="0.5 cutoff")
     panel.legend("upper right")
@@ -199,7 +200,7 @@ def decision_curve_svg(y_true: Any, y_prob: Any, *, sample_weight: Any = None,
     panel.line(t, nb, color=PALETTE["observed"], width=1.8, label="model", name="model")
     if marked_threshold is not None:
         panel.vline(float(marked_threshold), color=PALETTE["chosen"], width=1.1, name="marked",
-                    label=f"{marked_name} {marked_threshold:.3f}")
+                    label=f"{marked_name} {cutoff_text(marked_threshold, '.3f')}")
     panel.legend("upper right")
     return chart.to_svg()
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from .. import __version__
+from .._validation import cutoff_text
 from ..plot import (
     CostCurveDisplay,
     DecisionCurveDisplay,
@@ -435,7 +436,7 @@ def make_figures(c: Any) -> dict[str, str]:
         if c.chosen_cutoff != disp.cutoff:
             disp.chosen_line_.set_xdata([c.chosen_cutoff, c.chosen_cutoff])
         # the legend names the cutoff as the table and the text do
-        disp.chosen_line_.set_label(f"{c.chosen_name} {c.chosen_cutoff:.3f}")
+        disp.chosen_line_.set_label(f"{c.chosen_name} {cutoff_text(c.chosen_cutoff, '.3f')}")
         disp.ax_.legend(fontsize=7, frameon=False, loc="best")
         return figure_to_svg(disp.figure_, "cost")
 
@@ -445,7 +446,7 @@ def make_figures(c: Any) -> dict[str, str]:
             marked_threshold=c.chosen_cutoff,
         )
         if dc.marked_line_ is not None:
-            dc.marked_line_.set_label(f"{c.chosen_name} {c.chosen_cutoff:.3f}")
+            dc.marked_line_.set_label(f"{c.chosen_name} {cutoff_text(c.chosen_cutoff, '.3f')}")
             dc.ax_.legend(fontsize=7, frameon=False, loc="upper right")
         return figure_to_svg(dc.figure_, "dc")
 
