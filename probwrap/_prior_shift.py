@@ -604,7 +604,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             res = estimate_multiclass_target(est, self.estimator_, X, sample_weight, rs,
                                              folds=scorer)
             # (the fold models scored the rows where they live whenever there are any)
-            self._warn_refit_left_out(None if scorer is None else True)
+            # (the reductions read them for EM with the default interval only)
+            self._warn_refit_left_out(None if scorer is None or self.method != "em"
+                                      or self.interval != "score" else True)
             return self._finish_adapt(res, res.interval)
         if _is_dask(X) or _is_dask(sample_weight):
             # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is
@@ -645,26 +647,29 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
     def _warn_refit_left_out(self, folds: Any) -> None:
         """Warn when the base model was refit here and its labelled rows are kept, but the
-        interval asked for cannot read the fold models (a bootstrap interval, more than 20,000
-        unlabelled two-class Dask or Spark rows, a multiclass method other than EM): it then leaves out how much the
-        refit moves with the labelled draw."""
-        carried = folds is not None and self.interval == "score" and (
-            self.classes_.shape[0] == 2 or self.method == "em")
-        if (carried or not getattr(self, "_refit_here", False)
+        unlabelled rows cannot be scored by the fold models: more than 20,000 two-class Dask or
+        Spark rows (reduced on the workers to a tally of the refit model's score), or more than
+        two classes on Dask or Spark rows with a method other than EM or a bootstrap interval
+        (the reductions read the fold models for EM's default interval only). The interval then
+        leaves out how much the refit moves with the labelled draw. Every interval on rows in
+        memory or collected from a small Dask or Spark set reads the fold models (the score and
+        class-moment intervals, and the bootstrap intervals too since 4 December 2026), so it
+        does not warn."""
+        if (folds is not None or not getattr(self, "_refit_here", False)
                 or getattr(self.prior_estimator_, "_src_fold", None) is None
                 or self.prior_estimator_.n_resamples == 0):
             return
         warnings.warn(
-            "adapt: the base model was refit on the labelled rows, and this interval "
-            f"(interval={self.interval!r}, method={self.method!r}, on these rows) does not "
+            "adapt: the base model was refit on the labelled rows, and these unlabelled rows "
+            "(Dask or Spark) are scored by the refit model only, so the interval does not "
             "carry how much that refit moves with the draw of the labelled rows; with a "
             "high-variance model on a few hundred rows it can cover several points less than "
-            "its level (docs/prior_shift.md, 'A base model refit on the labelled rows'). The "
-            "default interval (interval='score'; method='em' with more than two classes) "
-            "carries it, on in-memory rows and on Dask or Spark rows except more than 20,000 "
-            "rows of two classes (those are reduced to a tally of the refit model's score, "
-            "which the fold models' scores of each row cannot join); or fit the base model "
-            "elsewhere and pass it frozen.",
+            "its level (docs/prior_shift.md, 'A base model refit on the labelled rows'). It is "
+            "carried on rows in memory (every interval) and on Dask or Spark rows except more "
+            "than 20,000 rows of two classes (those are reduced to a tally of the refit "
+            "model's score, which the fold models' scores of each row cannot join) and, with "
+            "more than two classes, a method other than 'em' or a bootstrap interval; or fit "
+            "the base model elsewhere and pass it frozen.",
             UserWarning,
             stacklevel=3,
         )

@@ -24,6 +24,7 @@ from sklearn.datasets import load_breast_cancer, load_wine
 from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 from sklearn.model_selection import StratifiedKFold
+from sklearn.neighbors import KNeighborsClassifier
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
@@ -197,25 +198,204 @@ def test_monitor_batches_carry_the_fold_models(cancer_split):
                                model.target_prior_interval_, atol=1e-12)
 
 
-def test_bootstrap_interval_with_a_refit_model_warns(cancer_split):
-    # the bootstrap intervals resample rows and do not read the fold models: adapt says so
-    # (and does not for a frozen model, which has no refit to leave out)
+def _held_out(base, X, y, X_new, seed, n_folds=3):
+    """Cross-fitting outside the wrapper: (held-out posteriors of the labelled rows, fold of
+    each, the fold models' posteriors of the new rows (K, n, k), the refit model's)."""
+    fold = np.empty(y.shape[0], dtype=int)
+    held = np.empty((y.shape[0], np.unique(y).shape[0]))
+    proba = []
+    for i, (train, test) in enumerate(
+            StratifiedKFold(n_folds, shuffle=True, random_state=seed).split(X, y)):
+        model = clone(base).fit(X[train], y[train])
+        fold[test] = i
+        held[test] = model.predict_proba(X[test])
+        proba.append(model.predict_proba(X_new))
+    return held, fold, np.stack(proba), clone(base).fit(X, y).predict_proba(X_new)
+
+
+def _poisson_counts(seed, n_resamples, n_rows):
+    # PriorEstimator's documented draw: one NumPy Generator seeded from the RandomState of
+    # random_state, Poisson(1) counts per row and resample (labelled rows not redrawn here)
+    gen = np.random.default_rng(np.random.RandomState(seed).randint(2**31 - 1))
+    return gen.poisson(1.0, size=(n_resamples, n_rows))
+
+
+def test_percentile_bootstrap_resamples_the_fold_models_scores(cancer_split):
+    # Estimator level, no calibration, labelled rows fixed: each resample's estimate solves the
+    # prior's score equation with every unlabelled row's score averaged over the fold models
+    # (weights: the folds' shares of the labelled rows), sum_i c_i sum_k s_k u_k(x_i; t) = 0,
+    # solved here by SciPy's brentq from the formula (Saerens et al. 2002's fixed point is the
+    # zero of this score; Chernozhukov et al. 2018, DML2, for the fold average). The interval is
+    # their 2.5 / 97.5 % quantiles (then widened as always); before 4 December 2026 the
+    # resamples read the refit model's posteriors, an interval that is measurably another.
+    from scipy.optimize import brentq
+
+    from probwrap.shift import PriorEstimator
+
     X, y, X_new = cancer_split
-    model = PriorShiftWrapper(_model(), cv=3, interval="bca", n_resamples=30, random_state=0)
+    base = make_pipeline(StandardScaler(), KNeighborsClassifier(25))
+    held, fold, fold_new, refit_new = _held_out(base, X, y, X_new, seed=0)
+    est = PriorEstimator(calibration=None, resample_source=False, interval="percentile",
+                         n_resamples=200, random_state=7, tol=1e-10, prior_strength=0.0)
+    est.fit(held, y, source_fold=fold)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = est.estimate(refit_new, fold_proba=list(fold_new))
+    src = est.source_prior_
+    share = np.bincount(fold, minlength=3) / y.shape[0]
+
+    def root(counts, proba, weights):  # proba (K, n, 2), averaged with `weights`
+        q = proba / src
+        return brentq(lambda t: sum(
+            s_k * np.sum(counts * (q_k[:, 1] - q_k[:, 0]) / ((1 - t) * q_k[:, 0] + t * q_k[:, 1]))
+            for s_k, q_k in zip(weights, q, strict=True)), 1e-9, 1 - 1e-9, xtol=1e-13)
+
+    counts = _poisson_counts(7, 200, X_new.shape[0])
+    n = float(X_new.shape[0])
+
+    def interval(proba, weights):
+        draws = np.array([root(c, proba, weights) for c in counts])
+        lo, hi = np.quantile(draws, [0.025, 0.975])
+        return _widen(np.array([[1 - hi, 1 - lo], [lo, hi]]), res.ml_prior, res.ml_prior, n, 0.95)
+
+    expected = interval(fold_new, share)
+    np.testing.assert_allclose(res.ml_interval, expected, rtol=0, atol=1e-8)
+    # the refit model's posteriors alone (the earlier bootstrap) give another interval
+    earlier = interval(refit_new[None], np.ones(1))
+    assert np.max(np.abs(earlier - expected)) > 2e-3
+    # and its point estimate still reads the refit model: brentq on the refit posteriors
+    assert res.ml_prior[1] == pytest.approx(
+        root(np.ones(X_new.shape[0]), refit_new[None], np.ones(1)), abs=1e-8)
+
+
+def test_multiclass_bbse_bootstrap_resamples_the_fold_models_posteriors():
+    # Three classes, method="bbse_soft" (whose interval is the bootstrap): each resample
+    # solves the soft confusion system C w = mu (Lipton, Wang & Smola 2018, eq. 4 with the soft
+    # confusion matrix) for mu the unlabelled rows' mean posterior averaged over the fold
+    # models; the prior is w * source shares. Solved here by numpy.linalg.solve on scikit-learn's
+    # bundled digits (3 / 5 / 8), the unlabelled rows resampled at shares (0.5, 0.3, 0.2).
+    from sklearn.datasets import load_digits
+
+    from probwrap.shift import PriorEstimator
+
+    digits = load_digits()
+    keep = np.isin(digits.target, (3, 5, 8))
+    X, y = digits.data[keep], np.searchsorted([3, 5, 8], digits.target[keep])
+    rng = np.random.default_rng(11)
+    order = rng.permutation(y.shape[0])
+    lab, pool = order[:300], order[300:]
+    cls = rng.choice(3, size=300, p=[0.5, 0.3, 0.2])
+    rows = np.array([rng.choice(pool[y[pool] == c]) for c in cls])
+    base = make_pipeline(StandardScaler(), LogisticRegression(C=0.05, max_iter=2000))
+    held, fold, fold_new, refit_new = _held_out(base, X[lab], y[lab], X[rows], seed=1)
+    est = PriorEstimator("bbse_soft", calibration=None, resample_source=False,
+                         interval="percentile", n_resamples=100, random_state=3)
+    est.fit(held, y[lab], source_fold=fold)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = est.estimate(refit_new, fold_proba=list(fold_new))
+    share = np.bincount(fold, minlength=3) / 300.0
+    soft = held.T @ np.eye(3)[y[lab]] / 300.0  # joint soft confusion, rows predicted
+    src = np.bincount(y[lab], minlength=3) / 300.0
+    averaged = np.tensordot(share, fold_new, axes=1)
+    draws = []
+    for c in _poisson_counts(3, 100, 300):
+        w = np.linalg.solve(soft, c @ averaged / c.sum())
+        assert np.all(w * src > 0)  # inside the simplex: no projection needed
+        draws.append(w * src)
+    lo, hi = np.quantile(np.array(draws), [0.025, 0.975], axis=0)
+    expected = _widen(np.column_stack([lo, hi]), res.prior, res.prior, 300.0, 0.95)
+    assert res.shift_pvalue < 0.05  # (so no widening toward the source shares either)
+    np.testing.assert_allclose(res.interval, expected, rtol=0, atol=1e-10)
+    refit_draws = [np.linalg.solve(soft, c @ refit_new / c.sum()) * src
+                   for c in _poisson_counts(3, 100, 300)]
+    earlier = np.quantile(np.array(refit_draws), [0.025, 0.975], axis=0).T
+    assert np.max(np.abs(earlier - np.column_stack([lo, hi]))) > 2e-3
+
+
+@pytest.mark.parametrize("interval", ["bca", "percentile"])
+def test_bootstrap_interval_with_a_refit_model_reads_the_fold_models(cancer_split, interval):
+    # the bootstrap intervals now resample the fold models' posteriors of the unlabelled rows:
+    # no warning (there was one before 4 December 2026), the same interval as the estimator
+    # given fold posteriors rebuilt outside the wrapper, another than with the folds hidden
+    X, y, X_new = cancer_split
+    model = PriorShiftWrapper(_model(), cv=3, interval=interval, n_resamples=60,
+                              random_state=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        model.fit(X, y)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        model.adapt(X_new)
+    assert not [w for w in caught if "refit" in str(w.message)]
+    _, fold_raw = _direct_folds(_model(), X, y, X_new, seed=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        rebuilt = model.prior_estimator_.estimate(model.estimator_.predict_proba(X_new),
+                                                  fold_proba=list(fold_raw), random_state=0)
+    np.testing.assert_allclose(model.target_prior_interval_, rebuilt.interval, atol=1e-10)
+    shown = model.target_prior_interval_.copy()
+    model._fold_models = None  # the earlier interval: the refit model's posteriors only
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        model.adapt(X_new)
+    assert np.max(np.abs(model.target_prior_interval_ - shown)) > 1e-4
+    # the shift test reads the fold models whatever the interval
+    score = _fit_adapt(PriorShiftWrapper(_model(), cv=3, random_state=0), X, y, X_new)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        again = PriorShiftWrapper(_model(), cv=3, interval=interval, n_resamples=60,
+                                  random_state=0).fit(X, y).adapt(X_new)
+    assert again.shift_statistic_ == score.shift_statistic_
+
+
+def test_multiclass_non_em_refit_does_not_warn():
+    # more than two classes with a method other than EM: the (bootstrap) interval reads the
+    # fold models, so adapt no longer warns (scikit-learn's bundled wine data)
+    X, y = load_wine(return_X_y=True)
+    order = np.random.default_rng(5).permutation(y.shape[0])
+    lab, new = order[:120], order[120:]
+    for method in ("bbse", "pacc"):
+        model = PriorShiftWrapper(_model(), cv=3, method=method, n_resamples=40,
+                                  random_state=2)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            model.fit(X[lab], y[lab])
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            model.adapt(X[new])
+        assert not [w for w in caught if "refit" in str(w.message)], method
+
+
+def test_dask_unlabelled_rows_with_a_refit_model(cancer_split, tally_path):
+    # unlabelled Dask rows beyond the kept-rows limit (lowered to 0 by `tally_path`) are tallied
+    # on the workers from the refit model's posteriors only: adapt warns. A small Dask set is
+    # collected as rows, which the fold models score too: the same interval as in memory.
+    da = pytest.importorskip("dask.array")
+    import probwrap.scale._tally as tally_module
+
+    X, y, X_new = cancer_split
+    model = PriorShiftWrapper(_model(), cv=3, random_state=0)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         model.fit(X, y)
     with pytest.warns(UserWarning, match="does not carry how much that refit moves"):
-        model.adapt(X_new)
-    # the shift test reads the fold models whatever the interval
-    score = _fit_adapt(PriorShiftWrapper(_model(), cv=3, random_state=0), X, y, X_new)
-    assert model.shift_statistic_ == score.shift_statistic_
-    frozen = PriorShiftWrapper(FrozenEstimator(model.estimator_), interval="bca",
-                               n_resamples=30, random_state=0)
+        model.adapt(da.from_array(X_new, chunks=100))
+    frozen = PriorShiftWrapper(FrozenEstimator(model.estimator_), random_state=0)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        frozen.fit(X, y).adapt(X_new)
+        frozen.fit(X, y).adapt(da.from_array(X_new, chunks=100))
     assert not [w for w in caught if "refit" in str(w.message)]
+    tally_module.KEPT_ROWS = 20_000  # (monkeypatch puts the original back after the test)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        model.adapt(da.from_array(X_new, chunks=100))
+    assert not [w for w in caught if "refit" in str(w.message)]
+    small = model.target_prior_interval_.copy()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        model.adapt(X_new)
+    np.testing.assert_allclose(small, model.target_prior_interval_, atol=1e-9)
 
 
 def test_shift_test_compares_fold_averaged_scores(cancer_split):

@@ -493,9 +493,11 @@ class PriorEstimator(_Resampling):
             compare the unlabelled rows' scores averaged over the fold models with the labelled
             rows' held-out scores of the same models (:func:`score_interval`), so they carry
             the difference between the fold models and a model refit on all labelled rows that
-            scored ``proba`` (the point estimate still reads ``proba``). Ignored without
-            ``source_fold`` or once the labelled rows are kept as a tally; the bootstrap
-            intervals do not read it.
+            scored ``proba`` (the point estimate still reads ``proba``). The bootstrap
+            intervals (and more than two classes with a method other than ``"em"``, whose
+            interval is the bootstrap) then resample every unlabelled row once per fold model,
+            weighted by the fold's share (since 4 December 2026; before, they read ``proba``).
+            Ignored without ``source_fold`` or once the labelled rows are kept as a tally.
 
         Returns
         -------
@@ -544,6 +546,7 @@ class PriorEstimator(_Resampling):
             self._warn_boundary(ml, p, wk, n_eff)
         refit = self._refit_folds(fold_proba, p_raw.shape[0])
         u_t = _score_rows(p, src)
+        share = None
         if refit is not None:
             # a model refit on the labelled rows: the unlabelled rows' scores averaged over the
             # fold models (weights: the folds' shares of the labelled rows), so they mix the
@@ -637,7 +640,11 @@ class PriorEstimator(_Resampling):
                         UserWarning,
                         stacklevel=2,
                     )
-                bounds, dropped = self._bootstrap(p_raw, w, centre, check_random_state(rs))
+                if refit is None:
+                    bounds, dropped = self._bootstrap(p_raw, w, centre, check_random_state(rs))
+                else:
+                    bounds, dropped = self._refit_bootstrap(
+                        fold_proba, refit[0], share, w, n_eff, centre, check_random_state(rs))
                 if ml is not None:
                     ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
@@ -659,6 +666,49 @@ class PriorEstimator(_Resampling):
             null_harm_scale=harm_scale,
             ml_interval=ml_bounds,
         )
+
+    def _refit_bootstrap(
+        self, fold_proba: Any, fold_calibrated: np.ndarray, share: np.ndarray, w: np.ndarray,
+        n_eff: float, centre: np.ndarray, rng: np.random.RandomState,
+    ) -> tuple[np.ndarray, int]:
+        """The bootstrap interval of a base model refit on the labelled rows, from the fold
+        models' posteriors of the unlabelled rows (``fold_proba``, raw; ``fold_calibrated``,
+        calibrated, shape (K, n, k)) instead of the refit model's.
+
+        Every unlabelled row enters once per fold model, weighted by the fold's share of the
+        labelled rows (``share``): the estimating equation is then the fold models' equations
+        averaged in the shares their held-out posteriors have among the labelled rows, which
+        the calibration, the source shares and the confusion matrices were fitted on. For EM
+        it is the score equation of the prior with each row's score averaged over the fold
+        models, the moment condition of :func:`score_interval` (Chernozhukov et al. 2018,
+        DML2); for the confusion-matrix methods the unlabelled rows' mean (hard or soft)
+        prediction averaged over the fold models. Each fold model never saw its fold's
+        labelled rows nor the unlabelled rows, so resampling both samples with the fold
+        models fixed carries the sampling error without the mismatch between the refit model
+        and the fold models. The interval is built around the estimate from the stacked rows
+        (the refit model's ``centre`` is then added by :func:`_widen`, as for the score
+        interval).
+        """
+        k = self.n_classes_
+        copies = fold_calibrated.shape[0]
+        raw = np.concatenate([self._checked_proba(f) for f in fold_proba])
+        stacked_w = np.concatenate([s * w for s in share])
+        p = fold_calibrated.reshape(-1, k)
+        wk = stacked_w * (n_eff / stacked_w.sum())
+        src = self.source_prior_
+        if self.method == "em":
+            start = centre if np.all(centre > 0) else src
+            with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+                fold_centre = _solve_prior(p, wk, src, start, float(self.tol),
+                                           int(self.max_iter))[0]
+        else:
+            with warnings.catch_warnings():
+                # the refit model's estimate above already warned about what this one would
+                warnings.simplefilter("ignore")
+                fold_centre = self._point(
+                    p, wk, src, self.confusion_, self.soft_confusion_,
+                    n_source=getattr(self, "n_source_effective_", None)).prior
+        return self._bootstrap(raw, stacked_w, fold_centre, rng, copies=copies)
 
     def _reconcile(self, bounds: np.ndarray, ml_bounds: np.ndarray | None,
                    pvalue: float | None) -> tuple[np.ndarray, np.ndarray | None]:

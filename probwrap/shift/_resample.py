@@ -210,11 +210,21 @@ class _Resampling:
         w: np.ndarray,
         centre: np.ndarray,
         rng: np.random.RandomState,
+        copies: int = 1,
     ) -> tuple[np.ndarray, int]:
+        """Bootstrap interval around ``centre`` from ``n_resamples`` Poisson resamples.
+
+        ``copies`` > 1: ``p_raw`` and ``w`` hold the unlabelled rows ``copies`` times over, one
+        block per fold model of a base model refit on the labelled rows (each block that fold
+        model's posteriors, its weights the rows' weights times the fold's share of the
+        labelled rows; see :meth:`PriorEstimator.estimate`). A resample draws each unlabelled
+        row once and gives every copy of it the same count, and the jackknife leaves a row's
+        copies out together, so the resampled unit is still the row.
+        """
         k = self.n_classes_
         source = self._source_rows()
         B = int(self.n_resamples)
-        n = p_raw.shape[0]
+        n = p_raw.shape[0] // int(copies)
         resample_source = bool(self.resample_source) and source is not None
         ws = source[2] if resample_source else None
         # all resample weights drawn up front, labelled then unlabelled, so a seed fixes both
@@ -233,12 +243,13 @@ class _Resampling:
             return None if src_counts is None else src_counts[b] * unit
 
         def draw_target(b: int) -> np.ndarray:
-            return tgt_counts[b] * w
+            counts = tgt_counts[b] if copies == 1 else np.tile(tgt_counts[b], int(copies))
+            return counts * w
 
         draws, dropped = self.replicate_draws(p_raw, draw_source, draw_target, B, centre)
         jack = None
         if self.interval == "bca" and draws.shape[0] > 0:
-            jack = self._jackknife(p_raw, w, centre, ws, rng)
+            jack = self._jackknife(p_raw, w, centre, ws, rng, copies)
         bounds = _interval_from_draws(
             centre, draws, jack, self.confidence_level, dropped, B, k,
         )
@@ -251,17 +262,22 @@ class _Resampling:
         centre: np.ndarray,
         ws: np.ndarray | None,
         rng: np.random.RandomState,
+        copies: int = 1,
     ) -> list[np.ndarray]:
-        """Leave-one-group-out estimates per sample (target rows; labelled rows when resampled)."""
+        """Leave-one-group-out estimates per sample (target rows; labelled rows when resampled);
+        with ``copies`` > 1 (see :meth:`_bootstrap`) a target row's copies share its group."""
         out = []
         samples = [("target", w)] + ([("source", ws)] if ws is not None else [])
         for name, weights in samples:
-            n = weights.shape[0]
+            times = int(copies) if name == "target" else 1
+            n = weights.shape[0] // times
             groups = min(JACKKNIFE_GROUPS, n)
             if groups < 2:
                 continue
             label = np.empty(n, dtype=int)
             label[rng.permutation(n)] = np.arange(n) % groups
+            if times > 1:
+                label = np.tile(label, times)
             values = []
             for g in range(groups):
                 keep = np.where(label == g, 0.0, weights)
