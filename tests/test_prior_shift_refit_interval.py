@@ -455,3 +455,36 @@ def test_multiclass_refit_interval_is_the_fold_averaged_moment_interval():
     ml = model.prior_estimate_.ml_prior
     np.testing.assert_allclose(model.prior_estimate_.ml_interval,
                                _widen(bounds, ml, ml, 58.0, 0.95), atol=1e-10)
+
+
+def test_many_labelled_rows_keep_no_fold_models_unless_asked(cancer_split, monkeypatch):
+    # More than SMALL_HELDOUT_ROWS labelled rows (lowered here to 100 of the 250) without
+    # keep_heldout: the held-out scores become a tally that mixes the folds and no fold models
+    # are kept, so the interval is the one with the fold models hidden (up to the tally's
+    # binning), without a warning (measured negligible at 25,000 rows: docs/prior_shift.md);
+    # keep_heldout=True keeps the rows and the fold models and carries the refit.
+    import probwrap._prior_shift as module
+
+    monkeypatch.setattr(module, "SMALL_HELDOUT_ROWS", 100)
+    X, y, X_new = cancer_split
+    default = PriorShiftWrapper(_model(), cv=3, random_state=0)
+    kept = PriorShiftWrapper(_model(), cv=3, random_state=0, keep_heldout=True)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        default.fit(X, y)
+        kept.fit(X, y)
+    assert default._fold_models is None and default.prior_estimator_._source_row_counts() is not None
+    assert len(kept._fold_models) == 3
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        default.adapt(X_new)
+    assert not [w for w in caught if "refit" in str(w.message)]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        kept.adapt(X_new)
+        carried = kept.target_prior_interval_.copy()
+        kept._fold_models = None
+        kept.adapt(X_new)
+    np.testing.assert_allclose(default.target_prior_interval_, kept.target_prior_interval_,
+                               atol=2e-3)
+    assert np.max(np.abs(carried - kept.target_prior_interval_)) > 1e-4
