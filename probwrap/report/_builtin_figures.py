@@ -20,9 +20,10 @@ from ..metrics import (
     net_benefit_treat_all,
     reliability_table,
 )
-from ..plot._intervals import bin_counts, wilson_interval
+from ..plot._intervals import bin_counts
 from ..plot._style import PALETTE
 from ._alarm_chart import alarm_svg
+from ._cells import bin_dispersion, bin_intervals
 from ._common import draw_figure
 from ._svg_axes import nice_ticks
 from ._svg_charts import Chart
@@ -53,13 +54,16 @@ def _upper(values: Any, floor: float = 0.0) -> float:
 
 def reliability_svg(
     y_true: Any, y_prob: Any, *, n_bins: int = 10, sample_weight: Any = None,
-    confidence_level: float = 0.95, key: str = "rel",
+    confidence_level: float = 0.95, key: str = "rel", dispersion: float = 1.0,
 ) -> str:
     """Reliability diagram with Wilson (1927) intervals and a count histogram, as SVG.
 
     1-d ``y_prob`` (positive-class probabilities, labels 0/1) gives the binary diagram; 2-d
     ``y_prob`` (class probabilities, labels column indices) the top-label form of Guo et al.
     (2017). Bins are :func:`probwrap.metrics.reliability_table` with equal-width bins.
+    ``dispersion`` above 1 (the cells' Pearson dispersion, :func:`._cells.bin_dispersion`)
+    widens each bin's interval to the quasi-binomial one: the Wilson interval of
+    ``n / dispersion`` trials (McCullagh & Nelder 1989, section 4.5).
 
     Examples
     --------
@@ -85,18 +89,23 @@ def reliability_svg(
                                          sample_weight=sample_weight, labels=[0.0, 1.0])
         form, ylabel, xlabel = "", "observed frequency", "mean forecast probability"
     n = bin_counts(table.weight, sample_weight)
-    low, high = wilson_interval(table.observed_frequency * n, n, level)
+    low, high = bin_intervals(table.observed_frequency, n, dispersion, level)
+    widened = dispersion != 1.0
+    band_words = (f"Wilson {level:.0%} interval" if not widened else
+                  f"Wilson {level:.0%} interval, widened for overdispersion")
     chart = Chart(
         key, title=f"Reliability{form} (calibration error {ece:.4f})", width=540, height=500,
         description=f"Observed frequency against mean forecast in {n_bins} equal-width bins, "
-        f"with {level:.0%} Wilson intervals; rows per bin in the lower panel.",
+        f"with {level:.0%} Wilson intervals"
+        + ("" if not widened else f" on the trials divided by the cells' dispersion "
+           f"{dispersion:.3g}") + "; rows per bin in the lower panel.",
     )
     top = chart.add_panel(xlim=(0.0, 1.0), ylim=(0.0, 1.0), ylabel=ylabel, height=3.2,
                           show_xticklabels=False)
     top.line([0.0, 1.0], [0.0, 1.0], color=PALETTE["ideal"], width=1.0, dash=(4, 3),
              label="calibrated", name="diagonal")
     top.errorbars(table.mean_predicted, low, high, color=PALETTE["observed"], width=1.2,
-                  label=f"Wilson {level:.0%} interval", name="wilson")
+                  label=band_words, name="wilson")
     top.line(table.mean_predicted, table.observed_frequency, color=PALETTE["observed"],
              width=1.6, marker=True, label="observed", name="observed")
     top.legend("upper left")
@@ -290,7 +299,8 @@ def builtin_figures(content: Any) -> dict[str, str]:
     c = content
     figs: dict[str, str] = {}
     draw_figure(c, figs, "reliability", reliability_svg, c.y_true, c.y_prob, n_bins=c.n_bins,
-                sample_weight=c.sample_weight, confidence_level=c.confidence_level, key="rel")
+                sample_weight=c.sample_weight, confidence_level=c.confidence_level, key="rel",
+                dispersion=bin_dispersion(getattr(c, "resampling", None)))
     if getattr(c, "kind", "binary") == "general":
         return figs
     if c.cost_matrix is not None:

@@ -20,8 +20,11 @@ note that asks for ``cells``.
 For binary outcomes and weights that are whole numbers (trial counts), the cells' Pearson
 dispersion (:func:`probwrap.aggregated.binomial_dispersion`, held-out forecasts: no fitted
 parameters) says how much more the cells vary than binomial; well above 1, everything that
-reads the weights as independent trials (the reliability diagram's Wilson intervals, the shift
-test, the prevalence interval) is too sure.
+reads the weights as independent trials is too sure. The reliability diagram's per-bin Wilson
+intervals therefore take the quasi-binomial variance ``phi p (1 - p) / n`` (McCullagh & Nelder
+1989, section 4.5: one dispersion ``phi`` for the whole fit): each bin's trial count is divided by
+``max(1, phi)`` before its Wilson interval is taken (:func:`bin_intervals`). The shift test and
+the prevalence interval still read the weights as independent trials.
 """
 
 from __future__ import annotations
@@ -37,7 +40,7 @@ from .._heldout import feature_cells
 from .._validation import plain
 
 __all__ = ["ResamplingUnit", "resampling_unit", "unit_words", "DISPERSION_NOTE_RATIO",
-           "DISPERSION_NOTE_PVALUE"]
+           "DISPERSION_NOTE_PVALUE", "bin_dispersion", "bin_intervals"]
 
 #: the report warns about overdispersion when the cells' Pearson dispersion is above this ratio
 #: (common practice reads values near 1 as binomial; 1.5 is our rule of thumb for "well above")
@@ -172,10 +175,11 @@ def resampling_unit(cells: Any, *, n: int, y_index: np.ndarray, w: np.ndarray | 
         message = (
             f"the {n_cells} cells vary {ratio:.3g} times as much as binomial counts would "
             f"(Pearson dispersion; chi-square p = {pvalue:.2g}): the intervals here resample "
-            "whole cells and carry that, but the reliability diagram's Wilson intervals, the "
-            "shift test and the prevalence interval read the weights as independent trials and "
-            "are too narrow, by about the square root of the dispersion in width; compare "
-            "models on held-out cells"
+            "whole cells and carry that, and the reliability diagram's Wilson intervals are "
+            "widened by its square root (quasi-binomial), but the shift test and the "
+            "prevalence interval read the weights as independent trials and are too narrow, "
+            "by about the square root of the dispersion in width; compare models on held-out "
+            "cells"
         )
         notes.add("cells", "overdispersion", "UserWarning", message)
         warnings.warn(f"report, overdispersion: {message}", UserWarning, stacklevel=4)
@@ -193,3 +197,93 @@ def unit_words(unit: ResamplingUnit | None) -> str:
         words += (f"; the cells vary {unit.dispersion:.3g} times as much as binomial counts "
                   "(Pearson dispersion, 1 for binomial)")
     return words
+
+
+def bin_dispersion(unit: ResamplingUnit | None) -> float:
+    """What a reliability bin's trial count is divided by: ``max(1, phi)`` for cells.
+
+    ``phi`` is the cells' Pearson dispersion (:attr:`ResamplingUnit.dispersion`): the
+    quasi-binomial variance ``phi p (1 - p) / n`` of a proportion (McCullagh & Nelder 1989,
+    section 4.5) is the binomial one of ``n / phi`` trials. Below 1 (cells less varied than
+    binomial) the binomial count is kept, as common practice does rather than narrowing. Rows,
+    cells without whole-number weights and more than two classes give 1: the count as before.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> bin_dispersion(ResamplingUnit("rows", n_cells=10))
+    1.0
+    >>> bin_dispersion(ResamplingUnit("cells", "given", np.arange(3), 3, dispersion=4.0))
+    4.0
+    >>> bin_dispersion(ResamplingUnit("cells", "given", np.arange(3), 3, dispersion=0.5))
+    1.0
+    """
+    if unit is None or unit.kind != "cells" or unit.dispersion is None:
+        return 1.0
+    return max(1.0, float(unit.dispersion))
+
+
+def bin_intervals(observed: Any, counts: Any, dispersion: float,
+                  confidence_level: float) -> tuple[np.ndarray, np.ndarray]:
+    """Per-bin Wilson (1927) intervals on ``counts / dispersion`` trials (quasi-binomial).
+
+    ``observed``: each bin's observed frequency; ``counts``: its trial count
+    (:func:`probwrap.plot._intervals.bin_counts`). ``dispersion == 1`` is the plain Wilson
+    interval, bit for bit.
+
+    Examples
+    --------
+    >>> low, high = bin_intervals([0.3], [40.0], 4.0, 0.95)  # as 3 of 10 trials
+    >>> round(float(low[0]), 4), round(float(high[0]), 4)
+    (0.1078, 0.6032)
+    """
+    from ..plot._intervals import wilson_interval
+
+    n = np.asarray(counts, dtype=float)
+    freq = np.asarray(observed, dtype=float)
+    if dispersion != 1.0:
+        n = n / float(dispersion)
+    return wilson_interval(freq * n, n, confidence_level)
+
+
+def reliability_diagram(content: Any) -> Any:
+    """The report's reliability diagram (matplotlib), its intervals widened for cells.
+
+    The same :class:`probwrap.plot.ReliabilityDiagram` as before for rows (bit for bit); for
+    cells with a Pearson dispersion above 1 the bins' Wilson intervals are those of
+    :func:`bin_intervals` and the legend says they were widened.
+    """
+    from ..plot import ReliabilityDiagram
+    from ..plot._intervals import bin_counts
+
+    c = content
+    phi = bin_dispersion(getattr(c, "resampling", None))
+    binary = np.asarray(c.y_prob).ndim == 1
+    extra = {"pos_label": 1.0} if binary else {}
+    if phi == 1.0:
+        return ReliabilityDiagram.from_predictions(
+            c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
+            confidence_level=c.confidence_level, **extra)
+    first = ReliabilityDiagram.from_predictions(
+        c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
+        confidence_level=c.confidence_level, band=None, **extra)
+    table = first.table
+    low, high = bin_intervals(table.observed_frequency,
+                              bin_counts(table.weight, c.sample_weight), phi,
+                              c.confidence_level)
+    rel = ReliabilityDiagram(table=table, band_low=low, band_high=high, band="wilson",
+                             calibration_error=first.calibration_error,
+                             confidence_level=c.confidence_level).plot()
+    rel.band_artist_.set_label(f"Wilson {c.confidence_level:.0%} interval, widened for "
+                               f"overdispersion (trials / {phi:.3g})")
+    rel.ax_.legend(loc="upper left", fontsize=7, frameon=False)
+    return rel
+
+
+def widened_words(content: Any) -> str:
+    """The figure caption's words on widened bin intervals ("" when not widened)."""
+    phi = bin_dispersion(getattr(content, "resampling", None))
+    if phi == 1.0:
+        return ""
+    return (f" on each bin's trials divided by the cells' Pearson dispersion {phi:.3g} "
+            "(quasi-binomial, McCullagh & Nelder 1989)")

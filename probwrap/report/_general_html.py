@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 
-from ._cells import unit_words
+from ._cells import reliability_diagram, unit_words, widened_words
 from ._common import draw_figure, figure_notes
 from ._general import MulticlassReportContent
 from ._html_parts import (
@@ -31,15 +31,12 @@ def general_figures(c: MulticlassReportContent) -> dict[str, str]:
 
     Warnings met while drawing a figure become notes about it (:func:`._common.draw_figure`).
     """
-    from ..plot import ActionShareDisplay, ClassPriorDisplay, ReliabilityDiagram
+    from ..plot import ActionShareDisplay, ClassPriorDisplay
 
     figs: dict[str, str] = {}
 
     def reliability() -> str:
-        rel = ReliabilityDiagram.from_predictions(
-            c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
-            confidence_level=c.confidence_level,
-        )
+        rel = reliability_diagram(c)
         return figure_to_svg(rel.figure_, "rel")
 
     def actions() -> str:
@@ -100,8 +97,8 @@ def _calibration(c: MulticlassReportContent, figures: dict[str, str]) -> str:
     parts.append(_figure(
         "fig-reliability", figures["reliability"],
         f"Top-label reliability diagram: accuracy of the most probable class against its mean "
-        f"probability in {c.n_bins} equal-width bins, with {level} Wilson (1927) intervals; "
-        "rows per bin below.",
+        f"probability in {c.n_bins} equal-width bins, with {level} Wilson (1927) intervals"
+        f"{widened_words(c)}; rows per bin below.",
         figure_notes(c, "reliability"),
     ))
     parts.append("</section>")

@@ -10,10 +10,9 @@ from ..plot import (
     CostCurveDisplay,
     DecisionCurveDisplay,
     PrevalenceDriftDisplay,
-    ReliabilityDiagram,
 )
 from ._alarm_chart import alarm_svg
-from ._cells import unit_words
+from ._cells import reliability_diagram, unit_words, widened_words
 from ._common import draw_figure, figure_notes
 from ._content import BAYES_NAME, HALF_NAME, ReportContent
 from ._general_groups import multiclass_group_section
@@ -102,7 +101,8 @@ def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
     parts.append(_figure(
         "fig-reliability", figures["reliability"],
         f"Reliability diagram: observed frequency against mean forecast in {c.n_bins} "
-        f"equal-width bins, with {level} Wilson (1927) intervals; rows per bin below.",
+        f"equal-width bins, with {level} Wilson (1927) intervals{widened_words(c)}; rows per "
+        "bin below.",
         figure_notes(c, "reliability"),
     ))
     parts.append("</section>")
@@ -423,10 +423,7 @@ def make_figures(c: Any) -> dict[str, str]:
     figs: dict[str, str] = {}
 
     def reliability() -> str:
-        rel = ReliabilityDiagram.from_predictions(
-            c.y_true, c.y_prob, n_bins=c.n_bins, sample_weight=c.sample_weight,
-            confidence_level=c.confidence_level, pos_label=1.0,
-        )
+        rel = reliability_diagram(c)
         return figure_to_svg(rel.figure_, "rel")
 
     def cost() -> str:
