@@ -152,6 +152,8 @@ class GroupChecks:
         Groups too small to judge, then every warning met while computing a group's numbers
         and every number that could not be computed, with the group named (shown in the
         report's "By group" section).
+    resampled : {"rows", "cells"}
+        What the intervals resampled within each group (``cells``: whole cells).
     """
 
     groups: list[GroupCheck]
@@ -161,6 +163,7 @@ class GroupChecks:
     min_rows: float
     min_events: float
     notes: list[str] = field(default_factory=list)
+    resampled: str = "rows"
 
     def to_frame(self):
         """The per-group table as a pandas DataFrame (needs pandas, in the ``cli`` extra)."""
@@ -183,6 +186,28 @@ def _missing_label(value: Any) -> bool:
     if isinstance(value, (np.datetime64, np.timedelta64)):
         return bool(np.isnat(value))
     return False
+
+
+def cell_labels(cells: Any, n_rows: int) -> np.ndarray:
+    """``cells`` (the cell of every row) as codes ``0 .. n_cells - 1``, or a ``ValueError``.
+
+    Examples
+    --------
+    >>> cell_labels(["b", "a", "b"], 3).tolist()
+    [1, 0, 1]
+    """
+    arr = np.asarray(cells)
+    if arr.ndim != 1 or arr.shape[0] != n_rows:
+        raise ValueError(f"`cells` must be 1-d with one cell label per row ({n_rows}); got "
+                         f"shape {arr.shape}.")
+    if (arr.dtype.kind == "f" and np.any(np.isnan(arr))) or (
+            arr.dtype.kind == "O" and any(v is None for v in arr.tolist())):
+        raise ValueError("`cells` contains missing labels; give every row a cell.")
+    try:
+        _, codes = np.unique(arr, return_inverse=True)
+    except TypeError as exc:
+        raise ValueError(f"`cells` must hold sortable labels of one kind ({exc}).") from None
+    return np.asarray(codes, dtype=np.intp).ravel()
 
 
 def check_group_labels(groups: Any, n_rows: int) -> np.ndarray:
@@ -271,13 +296,15 @@ def _safe(notes, label, fn, *args, **kwargs) -> float:
         return float("nan")
 
 
-def _interval(notes, label, metric, y, p, w, n_resamples, level, seed) -> tuple[float, float]:
+def _interval(notes, label, metric, y, p, w, n_resamples, level, seed,
+              cells=None) -> tuple[float, float]:
     if n_resamples == 0 or np.count_nonzero(w) < 2:
         return (float("nan"), float("nan"))
+    kw = {} if cells is None else {"groups": cells}
     try:
         with _noted(notes, label):
             res = bootstrap_interval(metric, y, p, sample_weight=w, n_resamples=n_resamples,
-                                     confidence_level=level, random_state=seed)
+                                     confidence_level=level, random_state=seed, **kw)
     except ValueError as exc:
         notes.append(f"group {plain(label)!r}: no interval for {metric.__name__} ({exc})")
         return (float("nan"), float("nan"))
@@ -285,7 +312,7 @@ def _interval(notes, label, metric, y, p, w, n_resamples, level, seed) -> tuple[
 
 
 def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples, level,
-               seed, notes) -> GroupCheck:
+               seed, notes, cells=None) -> GroupCheck:
     pos = w * y
     neg = w * (1.0 - y)
     eff_rows, eff_pos, eff_neg = judged_sizes(w, y)
@@ -338,9 +365,11 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
         calibration_slope=slope,
         calibration_intercept=intercept,
         brier=_safe(notes, label, brier_score, y, p, sample_weight=w, labels=[0.0, 1.0]),
-        brier_interval=_interval(notes, label, brier_score, y, p, w, n_resamples, level, seed),
+        brier_interval=_interval(notes, label, brier_score, y, p, w, n_resamples, level, seed,
+                                 cells),
         log_loss=_safe(notes, label, log_loss, y, p, sample_weight=w, labels=[0.0, 1.0]),
-        log_loss_interval=_interval(notes, label, log_loss, y, p, w, n_resamples, level, seed),
+        log_loss_interval=_interval(notes, label, log_loss, y, p, w, n_resamples, level, seed,
+                                    cells),
         **decision,
     )
 
@@ -359,12 +388,14 @@ def calibration_by_group(
     n_resamples: int = 200,
     confidence_level: float = 0.95,
     random_state: int | None = 0,
+    cells: Any = None,
 ) -> GroupChecks:
     """Calibration, scores and the outcomes of a decision rule in every group.
 
     For each group (and for all rows together) this reports the smooth calibration error, Cox's
     calibration slope and calibration-in-the-large, the Brier score and log loss with percentile
-    bootstrap intervals (rows resampled within the group, :func:`bootstrap_interval`), and — for
+    bootstrap intervals (rows, or whole ``cells``, resampled within the group,
+    :func:`bootstrap_interval`), and — for
     the rule "act when ``y_prob > cutoff``" — the share acted on, the false-positive rate (share
     of negatives acted on), the false-negative rate (share of positives missed) and, with
     ``costs``, the mean cost per row. Then the spread of each quantity across the groups, largest
@@ -411,10 +442,14 @@ def calibration_by_group(
     confidence_level : float, default=0.95
     random_state : int or None, default=0
         Seed of the bootstrap (the same seed in every group).
-
-    Returns
-    -------
-    GroupChecks
+    cells : array-like of shape (n,), optional
+        Cell of every row when outcomes arrive as counts (a success row and a failure row per
+        group of trials, :func:`probwrap.aggregated.expand_counts`): the intervals, and those of
+        the gaps, then resample whole cells within each group, as the report's other intervals
+        do. Resampling the rows breaks each cell into its successes alone or its failures
+        alone: on statsmodels' star98 (303 districts in three groups) the rows' Brier-score
+        intervals are 2.7-8.6 times as wide as statsmodels' cluster-robust ones, the cells'
+        0.90-1.08 times. None: rows, as before, draw for draw.
 
     Examples
     --------
@@ -442,6 +477,7 @@ def calibration_by_group(
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
     w = count_scale_weights(w, "calibration_by_group")
     g = check_group_labels(groups, p.shape[0])
+    cell_codes = None if cells is None else cell_labels(cells, p.shape[0])
     if cutoff is not None and not (
         isinstance(cutoff, numbers.Real) and not isinstance(cutoff, bool) and 0.0 <= cutoff <= 1.0
     ):
@@ -469,8 +505,9 @@ def calibration_by_group(
         rows = inverse == k
         # dates and durations stay NumPy scalars (their .item() is integer nanoseconds)
         label = key.item() if hasattr(key, "item") and g.dtype.kind not in "mM" else key
-        checks.append(_check_one(label, y[rows], p[rows], w[rows], *args, computed))
-    overall = _check_one("all", y, p, w, *args, computed)
+        checks.append(_check_one(label, y[rows], p[rows], w[rows], *args, computed,
+                                 None if cell_codes is None else cell_codes[rows]))
+    overall = _check_one("all", y, p, w, *args, computed, cell_codes)
     judged = sorted((c for c in checks if c.judged), key=lambda c: -np.nan_to_num(
         c.calibration_error, nan=-1.0))
     small = sorted((c for c in checks if not c.judged), key=lambda c: -c.weight)
@@ -483,7 +520,7 @@ def calibration_by_group(
         # difference would be off-centre (and each evaluation takes about 30 ms)
         gaps = [gap if gap.metric == "calibration_error" else
                 _gap_interval(gap, rows_of, y, p, w, cutoff, matrix, int(n_resamples),
-                              float(confidence_level), random_state, computed)
+                              float(confidence_level), random_state, computed, cell_codes)
                 for gap in gaps]
     notes = []
     if small:
@@ -498,7 +535,8 @@ def calibration_by_group(
         )
     notes.extend(computed)
     return GroupChecks(groups=judged + small, gaps=gaps, overall=overall, cutoff=cutoff,
-                       min_rows=float(min_rows), min_events=float(min_events), notes=notes)
+                       min_rows=float(min_rows), min_events=float(min_events), notes=notes,
+                       resampled="rows" if cell_codes is None else "cells")
 
 
 def _metric_of(metric: str, y: np.ndarray, p: np.ndarray, w: np.ndarray, cutoff, matrix) -> float:
@@ -528,24 +566,27 @@ def _metric_of(metric: str, y: np.ndarray, p: np.ndarray, w: np.ndarray, cutoff,
 
 
 def _gap_interval(gap: GroupGap, rows_of: dict, y, p, w, cutoff, matrix, n_resamples: int,
-                  level: float, random_state, notes: list[str]) -> GroupGap:
+                  level: float, random_state, notes: list[str], cells=None) -> GroupGap:
     """``gap`` with the percentile interval of ``value(highest) - value(lowest)``, rows
     resampled within each group (counts as weights, as :func:`bootstrap_interval` does)."""
     def value(idx: np.ndarray, ww: np.ndarray) -> float:
         return _metric_of(gap.metric, y[idx], p[idx], ww, cutoff, matrix)
 
-    return gap_with_interval(gap, value, rows_of, w, n_resamples, level, random_state, notes)
+    return gap_with_interval(gap, value, rows_of, w, n_resamples, level, random_state, notes,
+                             cells=cells)
 
 
 def gap_with_interval(gap: GroupGap, value: Callable[[np.ndarray, np.ndarray], float],
                       rows_of: dict, w: np.ndarray, n_resamples: int, level: float,
-                      random_state, notes: list[str], label: str | None = None) -> GroupGap:
+                      random_state, notes: list[str], label: str | None = None,
+                      cells: np.ndarray | None = None) -> GroupGap:
     """``gap`` with the percentile interval of ``value(highest) - value(lowest)``.
 
     A stratified bootstrap: the rows of each of the two groups are resampled independently,
     the draw counts multiplying the weights (as :func:`bootstrap_interval` does), and
     ``value(row_indices, weights)`` evaluated on each. Resamples that give no value are left
-    out and counted in ``notes``; with fewer than half left, no interval.
+    out and counted in ``notes``; with fewer than half left, no interval. With ``cells`` (a
+    cell code per row) whole cells are drawn within each group instead of rows.
     """
     from dataclasses import replace
 
@@ -554,14 +595,21 @@ def gap_with_interval(gap: GroupGap, value: Callable[[np.ndarray, np.ndarray], f
     rng = check_random_state(random_state)
     name = gap.metric if label is None else label
     parts = [np.flatnonzero(rows_of[c]) for c in (gap.highest, gap.lowest)]
+    # each part's rows as positions of its cells (rows: one cell per row, the draw as before)
+    cell_of = [None if cells is None else np.unique(cells[idx], return_inverse=True)[1].ravel()
+               for idx in parts]
     diffs = np.full(n_resamples, np.nan)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # resamples that cannot give a value are counted below
         for r in range(n_resamples):
             vals = []
-            for idx in parts:
-                counts = np.bincount(rng.randint(0, idx.shape[0], size=idx.shape[0]),
-                                     minlength=idx.shape[0])
+            for idx, of in zip(parts, cell_of, strict=True):
+                if of is None:
+                    counts = np.bincount(rng.randint(0, idx.shape[0], size=idx.shape[0]),
+                                         minlength=idx.shape[0])
+                else:
+                    m = int(of.max()) + 1
+                    counts = np.bincount(rng.randint(0, m, size=m), minlength=m)[of]
                 try:
                     vals.append(value(idx, w[idx] * counts))
                 except (ValueError, np.linalg.LinAlgError):

@@ -514,7 +514,7 @@ def collect_content(
             y01, p, groups, cutoff=cutoff,
             costs=content.cost_matrix if cutoff is not None else None, sample_weight=w,
             n_resamples=n_resamples, confidence_level=confidence_level,
-            random_state=int(rng.randint(0, 2**31 - 1)),
+            random_state=int(rng.randint(0, 2**31 - 1)), cells=content.resampling.groups,
         )
     step("done", 4)
     return content

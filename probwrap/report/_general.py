@@ -335,7 +335,8 @@ def collect_general_content(
             action_names=None if acts is None else content.action_names,
             rule_label=None if chosen is None else chosen.label, n_bins=n_bins,
             n_resamples=n_resamples, confidence_level=confidence_level,
-            random_state=int(rng.randint(2**31 - 1)), class_names=content.class_names)
+            random_state=int(rng.randint(2**31 - 1)), class_names=content.class_names,
+            cells=content.resampling.groups)
     step("done", 4)
     return content
 

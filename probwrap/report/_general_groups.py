@@ -27,12 +27,13 @@ from ..metrics._groups import (
     MIN_EVENTS,
     MIN_ROWS,
     GroupGap,
+    cell_labels,
     check_group_labels,
     gap_with_interval,
 )
 from ..metrics._inputs import count_scale_weights
 from ._common import NoteLog
-from ._groups_html import gap_interval_text
+from ._groups_html import gap_interval_text, resampled_words
 from ._html_parts import _text
 
 __all__ = ["ClassGroupCheck", "ClassGroupChecks", "multiclass_by_group",
@@ -74,10 +75,12 @@ class ClassGroupChecks:
     action_names: tuple[str, ...] | None
     rule_label: str | None
     notes: list[str] = field(default_factory=list)
+    resampled: str = "rows"
 
 
 def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, level, seed,
-         min_rows, min_events, classes_present, class_names, log: NoteLog) -> ClassGroupCheck:
+         min_rows, min_events, classes_present, class_names, log: NoteLog,
+         cells: np.ndarray | None = None) -> ClassGroupCheck:
     key, about = f"group:{group}", f"group {group}"
     # sizes as calibration_by_group judges them: weights on the row-count scale, summed
     eff_class = [float(w[y == j].sum()) for j in classes_present]
@@ -101,9 +104,10 @@ def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, l
     def interval(fn):
         if n_resamples == 0 or lacking:
             return _NAN2
+        kw = {} if cells is None else {"groups": cells}
         res = log.compute(key, about, bootstrap_interval, fn, y, p, sample_weight=w,
                           n_resamples=n_resamples, confidence_level=level, random_state=seed,
-                          expected=(ValueError,))
+                          expected=(ValueError,), **kw)
         if res is None:
             return _NAN2
         return float(res.confidence_interval.low), float(res.confidence_interval.high)
@@ -159,7 +163,7 @@ def multiclass_by_group(
     action_names: tuple[str, ...] | None = None, rule_label: str | None = None,
     n_bins: int = 10, n_resamples: int = 200, confidence_level: float = 0.95,
     random_state: int = 0, min_rows: float = MIN_ROWS, min_events: float = MIN_EVENTS,
-    class_names: Any = None,
+    class_names: Any = None, cells: Any = None,
 ) -> ClassGroupChecks:
     """Multiclass checks in every group; see the module docstring.
 
@@ -173,9 +177,12 @@ def multiclass_by_group(
     within each of the two, as the binary table does); the binned calibration errors and the
     largest class-share gap get none: resampled, they are biased upwards by amounts that
     differ with the group's size, so their difference has no honest percentile interval.
+    ``cells`` (the cell of every row, aggregated counts): whole cells are resampled within
+    each group instead of rows (:func:`probwrap.metrics.calibration_by_group`).
     """
     n, k = proba.shape
     g = check_group_labels(groups, n)
+    codes = None if cells is None else cell_labels(cells, n)
     w = np.ones(n) if sample_weight is None else np.asarray(sample_weight, dtype=float)
     w = count_scale_weights(w, "report, by group")
     present = np.flatnonzero(np.bincount(y_index, weights=w, minlength=k) > 0)
@@ -193,8 +200,9 @@ def multiclass_by_group(
         checks.append(_one(
             name, y_index[rows], proba[rows],
             w[rows], k, None if row_cost is None else row_cost[rows],
-            None if actions is None else actions[rows], n_actions, *args))
-    overall = _one("all", y_index, proba, w, k, row_cost, actions, n_actions, *args)
+            None if actions is None else actions[rows], n_actions, *args,
+            None if codes is None else codes[rows]))
+    overall = _one("all", y_index, proba, w, k, row_cost, actions, n_actions, *args, codes)
     judged = sorted((c for c in checks if c.judged), key=lambda c: -np.nan_to_num(
         c.top_label_error, nan=-1.0))
     small = sorted((c for c in checks if not c.judged), key=lambda c: -c.weight)
@@ -207,12 +215,12 @@ def multiclass_by_group(
         computed: list[str] = []
         gaps = [_with_interval(gap, rows_of, y_index, proba, w, k, actions, row_cost, action_names,
                                int(n_resamples), float(confidence_level), int(random_state),
-                               computed) for gap in gaps]
+                               computed, codes) for gap in gaps]
         notes += computed
     return ClassGroupChecks(groups=[*judged, *small], gaps=gaps,
                             overall=overall, min_rows=min_rows, min_events=min_events,
                             n_bins=n_bins, action_names=action_names, rule_label=rule_label,
-                            notes=notes)
+                            notes=notes, resampled="rows" if codes is None else "cells")
 
 
 _NO_GAP_INTERVAL = ("top_label_error", "classwise_error", "largest_share_gap")
@@ -221,7 +229,7 @@ _NO_GAP_INTERVAL = ("top_label_error", "classwise_error", "largest_share_gap")
 def _with_interval(gap: GroupGap, rows_of: dict, y: np.ndarray, p: np.ndarray, w: np.ndarray,
                    k: int, actions: np.ndarray | None, row_cost: np.ndarray | None,
                    action_names: tuple[str, ...] | None, n_resamples: int, level: float,
-                   seed: int, notes: list[str]) -> GroupGap:
+                   seed: int, notes: list[str], cells: np.ndarray | None = None) -> GroupGap:
     """``gap`` with its stratified bootstrap interval (none for the binned errors)."""
     if gap.metric in _NO_GAP_INTERVAL:
         return gap
@@ -241,7 +249,7 @@ def _with_interval(gap: GroupGap, rows_of: dict, y: np.ndarray, p: np.ndarray, w
         def value(idx, ww):
             return float(np.dot(ww, actions[idx] == j) / ww.sum())
     return gap_with_interval(gap, value, rows_of, w, n_resamples, level, seed, notes,
-                             label=gap.metric.replace("_", " "))
+                             label=gap.metric.replace("_", " "), cells=cells)
 
 
 def _cell(value: float, digits: int = 4) -> str:
@@ -290,8 +298,8 @@ def multiclass_group_section(c: Any) -> str:
         '<section id="by-group"><h2>By group</h2>'
         f"<p>The checks above, group by group: top-label and classwise calibration error "
         f"(plain binned estimates, {checks.n_bins} equal-width bins), the largest gap between a class's observed share "
-        "and its mean probability, and the scores with bootstrap intervals (rows resampled "
-        f"within the group).{said} Groups below {checks.min_rows:g} rows or "
+        "and its mean probability, and the scores with bootstrap intervals "
+        f"({resampled_words(checks)} within the group).{said} Groups below {checks.min_rows:g} rows or "
         f"{checks.min_events:g} rows of any class (common practice) are listed but not "
         "judged and left out of the gaps (rows are counted with the weights as row frequencies; "
         "weights summing to less than the number of rows are first rescaled to Kish's "

@@ -21,6 +21,12 @@ def _interval(pair: tuple[float, float], supported: bool = True) -> str:
     return f"<td>[{lo:.4f}, {hi:.4f}]{mark}</td>"
 
 
+def resampled_words(checks: Any) -> str:
+    """What the group intervals resampled, for the page."""
+    return ("whole cells resampled" if getattr(checks, "resampled", "rows") == "cells"
+            else "rows resampled")
+
+
 def group_section(c: Any) -> str:
     """HTML for ``c.group_checks`` (a :class:`probwrap.metrics.GroupChecks`), or ``""``."""
     checks = getattr(c, "group_checks", None)
@@ -57,7 +63,7 @@ def group_section(c: Any) -> str:
         '<section id="by-group"><h2>By group</h2>'
         "<p>The checks above, group by group: smooth calibration error (Błasiok &amp; Nakkiran "
         "2023), calibration slope and intercept (Cox 1958), scores with bootstrap intervals "
-        f"(rows resampled within the group).{rule} Groups below {checks.min_rows:g} rows "
+        f"({resampled_words(checks)} within the group).{rule} Groups below {checks.min_rows:g} rows "
         f"or {checks.min_events:g} rows of either class (common practice) are "
         "listed but not judged and left out of the gaps (rows are counted with the weights as "
         "row frequencies; weights summing to less than the number of rows are first rescaled "
@@ -69,8 +75,9 @@ def group_section(c: Any) -> str:
         f'<table id="group-checks"><thead><tr>{head}</tr></thead>'
         f"<tbody>{''.join(rows)}</tbody></table>"
         + (f'<h3>Largest gaps between judged groups first</h3>'
-           "<p>Each with the bootstrap interval of the difference between its two groups (rows "
-           "resampled within each group; none for the calibration error, whose resampled values "
+           "<p>Each with the bootstrap interval of the difference between its two groups "
+           f"({resampled_words(checks)} within each group; none for the calibration error, "
+           "whose resampled values "
            f'are biased upwards).</p><ul id="group-gaps">{gaps}</ul>'
            if gaps else "<p>Fewer than two judged groups: no gaps to compare.</p>")
         + notes + "</section>"
