@@ -293,3 +293,37 @@ def test_multiclass_by_group_resamples_cells_as_statsmodels_cluster_errors():
                            n_resamples=20, random_state=0)
     assert content.group_checks.resampled == "cells"
     assert "whole cells resampled within the group" in page
+
+
+def test_overdispersion_note_says_how_the_prevalence_part_counts_the_labelled_rows(star98):
+    # The shift test and the prevalence interval read weights as relative (docs/weights.md)
+    # and count the labelled rows by Kish's size: on star98 neither the 303 districts nor the
+    # 267,611 pupils. Against statsmodels' cluster-robust errors (districts) that is too wide
+    # for the labelled prevalence and too narrow for the labelled mean score; the note says
+    # so rather than claiming one direction.
+    from probwrap.shift import PriorEstimator
+
+    s = star98
+    c = s["content"]
+    w = s["w"]
+    kish = w.sum() ** 2 / np.dot(w, w)
+    note = next(n for n in c.notes if n.key == "cells")
+    assert f"Kish's effective size of the weights ({kish:.4g} rows here, for 303 cells of " \
+           "267611 trials)" in note.message
+    y, p = c.y_true, c.y_prob
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        est = PriorEstimator(n_resamples=2, random_state=0).fit(
+            np.column_stack([1 - p, p]), y.astype(int), w)
+    assert est.n_source_effective_ == pytest.approx(kish, rel=1e-12)  # measured 59.6
+    district = np.repeat(np.arange(s["k"].shape[0]), 2)[
+        np.column_stack([s["k"], s["n"] - s["k"]]).ravel() > 0]
+
+    def cluster_se(v):
+        return sm.WLS(v, np.ones((v.shape[0], 1)), weights=w).fit(
+            cov_type="cluster", cov_kwds={"groups": district, "use_correction": False}).bse[0]
+
+    f = np.average(y, weights=w)
+    # labels: Kish 0.064 vs cluster 0.027 (2.4x); mean score: 0.021 vs 0.031 (0.68x)
+    assert np.sqrt(f * (1 - f) / kish) > 2 * cluster_se(y)
+    assert np.sqrt(np.cov(p, aweights=w) / kish) < 0.8 * cluster_se(p)
