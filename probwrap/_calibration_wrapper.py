@@ -75,6 +75,13 @@ _PREDICT_WITH = ("auto", "refit", "fold_models")
 #: differs from every fold model alike and is the better model.
 FOLD_SPREAD_VARIATION_LIMIT = 0.10
 
+#: ``method="auto"`` with two classes, cross-fitted and predicting with the refit: a chosen
+#: temperature scaling that sharpens (``T < 1``) is replaced by Platt scaling when the refitted
+#: model's scores spread more than this many times as widely as every fold model's
+#: (``refit_spread_ratios_``): the temperature was then fitted to the level of near-constant
+#: fold scores (it has no intercept), not to a spread like the one it is applied to.
+_REFIT_SPREAD_RATIO_LIMIT = 3.0
+
 
 def _kept_probability_map() -> IdentityMap:
     """The one-vs-rest entry of a class with no calibration rows: the model's own probability
@@ -320,6 +327,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
         self._fit_on_heldout(ho)
         self._choose_predicting_models(X, ho)
+        scores, w = self.__dict__.pop("_map_rows")
+        if self.method == "auto":
+            self._cap_level_sharpening(scores, ho, w)
         return self
 
     def _fit_on_heldout(self, ho: Any) -> CalibrationWrapper:
@@ -375,8 +385,39 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
                 self.calibrator_ = self._fit_map(
                     CALIBRATION_METHODS[fallback](), scores, ho.y_index, w
                 )
+        self._map_rows = (scores, w)  # for _cap_level_sharpening after the predicting models
         self._warn_reversed(len(ho.y_index))
         return self
+
+    def _cap_level_sharpening(self, scores: np.ndarray, ho: Any, w: np.ndarray) -> None:
+        """``method="auto"``, two classes, cross-fitted: a temperature that sharpens (``T < 1``)
+        was fitted on the fold models' held-out scores; when the refitted model spreads its
+        scores more than ``_REFIT_SPREAD_RATIO_LIMIT`` times as widely as every fold model
+        (``refit_spread_ratios_``), those scores were near-constant beside the ones it will
+        be applied to, and a scale without an intercept fitted on them was fitted to their
+        level (the base rate), not to their spread. Applied to the refit's spread, it sharpens
+        what it never saw. Platt scaling, whose intercept takes the level, is used instead."""
+        if (scores.ndim != 1 or self.method_ != "temperature"
+                or self.predicted_with_ != "refit"
+                or "platt" not in self._auto_names(len(ho.y_index))):
+            return
+        ratios = np.asarray(self.refit_spread_ratios_, dtype=float)
+        beta = 1.0 / float(self.calibrator_.temperature_)
+        if beta <= 1.0 or ratios.size == 0 or not ratios.min() > _REFIT_SPREAD_RATIO_LIMIT:
+            return
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                platt = self._fit_map(CALIBRATION_METHODS["platt"](), scores, ho.y_index, w)
+        except (ValueError, FloatingPointError, np.linalg.LinAlgError):
+            return
+        self.method_notes_["temperature"] = (
+            f"not used: it sharpens (T = {1.0 / beta:.3g}) after being fitted on fold scores "
+            f"at most 1/{ratios.min():.3g} as spread as the refitted model's, i.e. to their "
+            "level, not their spread"
+        )
+        self.method_ = "platt"
+        self.calibrator_ = platt
 
     # -- which model predicts ---------------------------------------------------------------
     def _check_scores(self, values: np.ndarray) -> np.ndarray:
@@ -510,7 +551,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         if isinstance(fitted, HeldOutPredictions):
             # a small set (at most probwrap.scale._tally.KEPT_ROWS rows): its rows came to the
             # client, so the map is the in-memory fit of the same rows
-            return self._fit_on_heldout(fitted)
+            self._fit_on_heldout(fitted)
+            del self._map_rows  # multiclass: nothing for _cap_level_sharpening
+            return self
         self.calibrator_ = fitted
         self.predicted_with_, self.fold_models_ = "frozen", []
         self.refit_spread_ratios_, self.fold_spread_variation_ = np.empty(0), np.nan
