@@ -63,8 +63,9 @@ def test_nile_boosting_refit_not_sharpened():
     assert np.all(pw.refit_spread_ratios_ > 3.0)
     assert pw.predicted_with_ == "refit"
     # before: temperature with T = 0.41 (a 2.5x sharpening), test log loss 0.846
-    assert pw.method_ == "platt"
-    assert "not used" in pw.method_notes_["temperature"]
+    assert pw.method_ == "temperature"
+    assert pw.calibrator_.temperature_ == 1.0
+    assert "capped at 1" in pw.method_notes_["temperature"]
     ours = _log_loss(pw.predict_proba(X_te), y_te)
     ref = _log_loss(sk.predict_proba(X_te), y_te)
     assert ref == pytest.approx(0.693, abs=0.005)  # scikit-learn's sigmoid: the base rate
@@ -88,3 +89,47 @@ def test_sharpening_kept_where_the_refit_spreads_like_the_folds():
     assert pw.method_ == "temperature" and pw.calibrator_.temperature_ < 1.0
     assert np.all(pw.refit_spread_ratios_ < 3.0)
     assert _log_loss(pw.predict_proba(X[te]), y[te]) < _log_loss(sk.predict_proba(X[te]), y[te])
+
+
+def test_prior_shift_refit_forest_not_kept_unchecked():
+    # PriorShiftWrapper cross-fits its forest; the likelihood-ratio test judges the fold
+    # models' held-out probabilities, while predict_proba would return the refit forest's
+    # (never tested). statsmodels' nile, 48 rows, a forest: the map predicts now, the test's
+    # p-value is still reported, and the output is the fitted map's.
+    from sklearn.ensemble import RandomForestClassifier
+
+    from probwrap import PriorShiftWrapper
+
+    X_tr, X_te, y_tr, y_te = _nile()
+    forest = RandomForestClassifier(random_state=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        psw = PriorShiftWrapper(clone(forest), random_state=0).fit(X_tr, y_tr)
+        sk = CalibratedClassifierCV(clone(forest), method="sigmoid", cv=5).fit(X_tr, y_tr)
+    cal = psw.calibrator_
+    assert not cal.identity_kept_
+    assert 0.0 <= cal.identity_pvalue_ <= 1.0
+    own = psw.estimator_.predict_proba(X_te)
+    np.testing.assert_allclose(psw.predict_proba(X_te), cal.predict(own), atol=1e-12)
+    ours = _log_loss(psw.predict_proba(X_te), y_te)
+    ref = _log_loss(sk.predict_proba(X_te), y_te)  # scikit-learn's sigmoid on the same rows
+    floored = np.clip(own, cal.floor_, 1.0)
+    kept = _log_loss(floored / floored.sum(axis=1, keepdims=True), y_te)
+    assert ours < kept  # the forest's own (floored) probabilities do worse
+    assert ours <= ref + 0.05
+
+
+def test_prior_shift_frozen_model_keeps_the_test():
+    # A frozen model: the test judged the very probabilities predict_proba returns, and its
+    # choice stands (breast cancer, logistic regression fitted on other rows, 60 labelled rows).
+    from sklearn.frozen import FrozenEstimator
+
+    from probwrap import PriorShiftWrapper
+
+    X, y = load_breast_cancer(return_X_y=True)
+    model = make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000)).fit(X[:200], y[:200])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        psw = PriorShiftWrapper(FrozenEstimator(model)).fit(X[200:260], y[200:260])
+    cal = psw.calibrator_
+    assert cal.identity_kept_ == (cal.identity_pvalue_ > 0.05)
