@@ -87,8 +87,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     (``source_prior_``), fits a bias-corrected calibration on the held-out posteriors and
     records their confusion matrix. ``adapt(X)`` estimates the class priors of unlabelled rows.
 
-    ``predict_proba`` always returns the calibrated posteriors (``calibrator_``; the
-    estimator's own probabilities with ``calibration=None``), re-weighted to the prior in use,
+    ``predict_proba`` always returns the calibrated posteriors (``calibrator_``: for a
+    frozen estimator its own probabilities where the calibration's likelihood-ratio test keeps
+    them, for an estimator cross-fitted here always the fitted map, as the test judged the fold
+    models and not the refit one; the estimator's own probabilities with
+    ``calibration=None``), re-weighted to the prior in use,
     ``applied_prior_``: ``target_prior`` when it is given; otherwise, after ``adapt``, the
     source prior moved toward the estimate ``target_prior_`` by the share the evidence
     supports, ``adaptation_weight_ = max(0, 1 - evidence_cutoff_ * (k - 1) / shift_statistic_)``
