@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import numbers
 import warnings
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -32,6 +33,7 @@ from ._estimate import (
     _solve_prior,
     _warn_empty_columns,
     check_class_names,
+    evidence_strength,
     name_classes,
 )
 from ._interval import fold_shares, score_interval
@@ -543,7 +545,6 @@ class PriorEstimator(_Resampling):
             _warn_empty_columns(wk @ p, "predicted probability mass", self._names())
             ml = _solve_prior(p, wk, src, point.prior if np.all(point.prior > 0) else src,
                               float(self.tol), int(self.max_iter))[0]
-            self._warn_boundary(ml, p, wk, n_eff)
         refit = self._refit_folds(fold_proba, p_raw.shape[0])
         u_t = _score_rows(p, src)
         share = None
@@ -560,6 +561,9 @@ class PriorEstimator(_Resampling):
         test = _score_stat_moments((m_t, c_t, n_eff), _current_source_score(source_score), k,
                                     pooled=True, source_prior=src)
         stat, pvalue = test.statistic, test.pvalue
+        pseudo = None
+        if self.method == "em":
+            point, pseudo = self._fade_pull(point, p, wk, src, stat)
         harm_scale = null_harm_scale(p, w, src, test.mean_cov,
                                      reference_loss=getattr(self, "_source_log_loss", None))
         if ml is not None and harm_scale:
@@ -648,6 +652,12 @@ class PriorEstimator(_Resampling):
                 if ml is not None:
                     ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
+        if ml is not None and ml_bounds is not None and point.identified:
+            # the shrunk estimate stays among the shares the data allow (see _inside)
+            point, bounds = self._inside(point, ml, ml_bounds, bounds)
+        if ml is not None:
+            self._warn_boundary(ml, p, wk, n_eff, pvalue=pvalue, ml_bounds=ml_bounds,
+                                prior=point.prior, pseudo=pseudo)
         if k > 2 and bounds is not None and point.identified:
             bounds, ml_bounds = self._reconcile(bounds, ml_bounds, pvalue)
         return PriorEstimate(
@@ -665,6 +675,7 @@ class PriorEstimator(_Resampling):
             ml_prior=ml,
             null_harm_scale=harm_scale,
             ml_interval=ml_bounds,
+            pseudo_rows=pseudo,
         )
 
     def _refit_bootstrap(
@@ -709,6 +720,46 @@ class PriorEstimator(_Resampling):
                     p, wk, src, self.confusion_, self.soft_confusion_,
                     n_source=getattr(self, "n_source_effective_", None)).prior
         return self._bootstrap(raw, stacked_w, fold_centre, rng, copies=copies)
+
+    def _fade_pull(self, point: PriorEstimate, p: np.ndarray, wk: np.ndarray, src: np.ndarray,
+                   stat: float | None) -> tuple[PriorEstimate, float | None]:
+        """The shrunk EM estimate recomputed with ``prior_strength`` faded by the evidence of a
+        shift (:func:`evidence_strength`), and the pseudo-rows used."""
+        strength = float(getattr(self, "prior_strength", 0.0))
+        if strength <= 0:
+            return point, strength
+        used = evidence_strength(strength, p, wk, src, stat, self.n_classes_ - 1)
+        if used >= strength:
+            return point, strength
+        prior, n_iter, ok, dist = _solve_prior(p, wk, src, point.prior, float(self.tol),
+                                               int(self.max_iter), used)
+        return replace(point, prior=prior, n_iter=point.n_iter + n_iter, converged=ok,
+                       distance=float(dist)), used
+
+    @staticmethod
+    def _inside(point: PriorEstimate, ml: np.ndarray, ml_bounds: np.ndarray,
+                bounds: np.ndarray) -> tuple[PriorEstimate, np.ndarray]:
+        """Keep the shrunk estimate inside the interval of the class shares.
+
+        ``ml_bounds`` holds the shares the data do not reject at the interval's level; a shrunk
+        estimate beyond it would report a share the data reject. It is moved back along the
+        segment to the maximum-likelihood estimate (inside by construction; a convex
+        combination, so still on the simplex) to the interval's end, and the reported interval
+        is then ``ml_bounds`` with that point in it.
+        """
+        x = point.prior
+        d = x - ml
+        lo, hi = ml_bounds[:, 0], ml_bounds[:, 1]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            reach = np.where(d > 0, (hi - ml) / d, np.where(d < 0, (lo - ml) / d, np.inf))
+        lam = float(min(1.0, np.min(reach)))
+        if lam >= 1.0:
+            return point, bounds
+        new = ml + max(lam, 0.0) * d
+        new = np.clip(new, 0.0, 1.0)
+        new = new / new.sum()
+        out = np.column_stack([np.minimum(lo, new), np.maximum(hi, new)])
+        return replace(point, prior=new), out
 
     def _reconcile(self, bounds: np.ndarray, ml_bounds: np.ndarray | None,
                    pvalue: float | None) -> tuple[np.ndarray, np.ndarray | None]:
@@ -763,8 +814,16 @@ class PriorEstimator(_Resampling):
             stacklevel=3,
         )
 
-    def _warn_boundary(self, ml: np.ndarray, p: np.ndarray, w: np.ndarray, n_eff: float) -> None:
-        """Warn when the maximum-likelihood prior puts a class at (or next to) share 0 or 1."""
+    def _warn_boundary(self, ml: np.ndarray, p: np.ndarray, w: np.ndarray, n_eff: float, *,
+                       pvalue: float | None = None, ml_bounds: np.ndarray | None = None,
+                       prior: np.ndarray | None = None, pseudo: float | None = None) -> None:
+        """Warn when the maximum-likelihood prior puts a class at (or next to) share 0 or 1.
+
+        Where the data point firmly at the edge — the shift test rejects "no shift" at the
+        interval's level and the interval of that share (``ml_bounds``) excludes the source
+        share — the message says the edge is a finding, not an artefact, and where the
+        reported (shrunk) prior stands; otherwise it says why the edge is weakly supported.
+        """
         src = self.source_prior_
         edge = np.flatnonzero((ml <= 1e-3 * src) | (ml >= 1.0 - 1e-3 * (1.0 - src)))
         if edge.size == 0:
@@ -789,6 +848,28 @@ class PriorEstimator(_Resampling):
         why = (
             "the model separates the classes weakly" if worth < 0.25 else "there are few rows"
         )
+        alpha = 1.0 - float(self.confidence_level)
+        if (pvalue is not None and np.isfinite(pvalue) and pvalue < alpha
+                and ml_bounds is not None and prior is not None
+                and not ml_bounds[j, 0] <= src[j] <= ml_bounds[j, 1]):
+            pulled = (
+                f"pulled toward the source share by {pseudo:.2g} pseudo-rows (the pull fades as "
+                "the evidence of a shift grows)" if pseudo else "not pulled toward the source"
+            )
+            warnings.warn(
+                f"The maximum-likelihood share of {name_classes(j, self._names())} is at the "
+                f"edge ({ml[j]:.4g}; source share {src[j]:.4g}), and the data point there "
+                f"firmly: the shift test rejects no shift (p = {pvalue:.2g}), the "
+                f"{self.confidence_level:.0%} interval of the share [{ml_bounds[j, 0]:.3g}, "
+                f"{ml_bounds[j, 1]:.3g}] excludes the source share, and each of the "
+                f"{n_eff:.4g} effective unlabelled rows carries about {worth:.2g} of a labelled "
+                "row's information about it. Read the edge as a finding (these rows may hold no "
+                "member, or nearly none, of the class at share 0); the reported share "
+                f"{prior[j]:.3g} is {pulled} and lies inside the interval.",
+                BoundaryPriorWarning,
+                stacklevel=3,
+            )
+            return
         warnings.warn(
             f"The maximum-likelihood share of {name_classes(j, self._names())} is at the edge "
             f"({ml[j]:.4g}; source share {src[j]:.4g}): {why}. Each of the {n_eff:.4g} "
