@@ -121,8 +121,16 @@ def test_no_evidence_keeps_the_full_pull():
     assert res.shift_statistic < 3.84 and res.pseudo_rows == 20.0
     ref = em_prior(est.calibrate(s[unl]), est.source_prior_, prior_strength=20.0, tol=1e-9)
     np.testing.assert_allclose(res.prior, ref.prior, atol=2e-6)
-    assert evidence_strength(20.0, est.calibrate(s[unl]), np.ones(150), est.source_prior_,
-                             0.5, 1) == 20.0
+    p = est.calibrate(s[unl])
+    assert evidence_strength(20.0, p, np.ones(150), est.source_prior_, 0.5, 1) == 20.0
+    # on 8 rows the empirical-Bayes count is below 20 already at T = 3 (p = 0.08), but the pull
+    # fades only once the test rejects at the interval's level
+    few = evidence_strength(20.0, p[:8], np.ones(8), est.source_prior_, 3.0, 1)
+    assert few < 20.0
+    assert evidence_strength(20.0, p[:8], np.ones(8), est.source_prior_, 3.0, 1,
+                             pvalue=0.083, alpha=0.05) == 20.0
+    assert evidence_strength(20.0, p[:8], np.ones(8), est.source_prior_, 3.0, 1,
+                             pvalue=0.04, alpha=0.05) == few
 
 
 def test_three_classes_absent_class_stays_inside():

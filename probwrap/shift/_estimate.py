@@ -532,6 +532,8 @@ def evidence_strength(
     src: np.ndarray,
     statistic: float | None,
     dof: int,
+    pvalue: float | None = None,
+    alpha: float | None = None,
 ) -> float:
     r"""Pseudo-rows of the Dirichlet prior for the shrunk estimate, faded by the evidence.
 
@@ -550,7 +552,11 @@ def evidence_strength(
     ``dof`` degrees of freedom (the positive-part James-Stein rule, Efron & Morris 1973, which
     the evidence gate also uses), i.e. ``c = n_info dof / (T - dof)``. The pseudo-rows used are
     the smaller of that and ``strength``: all of ``strength`` while the evidence is weak
-    (``T <= dof (1 + n_info / strength)``), fading like ``1 / T`` beyond.
+    (``T <= dof (1 + n_info / strength)``), fading like ``1 / T`` beyond. With ``alpha``, all of
+    ``strength`` is also kept unless the test rejects "no shift" at that level (``pvalue <
+    alpha``): on a few dozen rows the count above falls below ``strength`` already at a ``T`` the
+    test does not find significant, and there the pull is what keeps a noisy estimate near the
+    source.
 
     ``n_info`` is the unlabelled rows' Fisher information about the shares at the source prior
     (the mean outer product of the scores ``p / src`` differenced against class 0, times the
@@ -573,6 +579,9 @@ def evidence_strength(
         The shift test's statistic (None or not finite: ``strength`` is returned).
     dof : int
         Its degrees of freedom, ``k - 1``.
+    pvalue, alpha : float or None
+        The test's p-value and the level it must reach before the pull fades (either None:
+        no such condition).
 
     Returns
     -------
@@ -590,6 +599,8 @@ def evidence_strength(
     """
     strength = float(strength)
     if strength <= 0 or statistic is None or not np.isfinite(statistic) or statistic <= dof:
+        return strength
+    if pvalue is not None and alpha is not None and not pvalue < alpha:
         return strength
     total = float(w.sum())
     if total <= 0:

@@ -563,7 +563,7 @@ class PriorEstimator(_Resampling):
         stat, pvalue = test.statistic, test.pvalue
         pseudo = None
         if self.method == "em":
-            point, pseudo = self._fade_pull(point, p, wk, src, stat)
+            point, pseudo = self._fade_pull(point, p, wk, src, stat, pvalue)
         harm_scale = null_harm_scale(p, w, src, test.mean_cov,
                                      reference_loss=getattr(self, "_source_log_loss", None))
         if ml is not None and harm_scale:
@@ -722,13 +722,16 @@ class PriorEstimator(_Resampling):
         return self._bootstrap(raw, stacked_w, fold_centre, rng, copies=copies)
 
     def _fade_pull(self, point: PriorEstimate, p: np.ndarray, wk: np.ndarray, src: np.ndarray,
-                   stat: float | None) -> tuple[PriorEstimate, float | None]:
+                   stat: float | None, pvalue: float | None,
+                   ) -> tuple[PriorEstimate, float | None]:
         """The shrunk EM estimate recomputed with ``prior_strength`` faded by the evidence of a
-        shift (:func:`evidence_strength`), and the pseudo-rows used."""
+        shift once the shift test rejects at the interval's level (:func:`evidence_strength`),
+        and the pseudo-rows used."""
         strength = float(getattr(self, "prior_strength", 0.0))
         if strength <= 0:
             return point, strength
-        used = evidence_strength(strength, p, wk, src, stat, self.n_classes_ - 1)
+        used = evidence_strength(strength, p, wk, src, stat, self.n_classes_ - 1, pvalue,
+                                 1.0 - float(self.confidence_level))
         if used >= strength:
             return point, strength
         prior, n_iter, ok, dist = _solve_prior(p, wk, src, point.prior, float(self.tol),
