@@ -89,7 +89,7 @@ def test_shrunk_share_is_the_dirichlet_map_with_the_faded_pseudo_rows(sorted_can
     # share (finite differences of the likelihood at the source share) over one pseudo-row's
     # curvature 1 / pi + 1 / (1 - pi) there
     X, y, s, lab, unl = sorted_cancer
-    est = PriorEstimator(n_resamples=0).fit(s[lab], y[lab])
+    est = PriorEstimator().fit(s[lab], y[lab])
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", BoundaryPriorWarning)
         res = est.estimate(s[unl])
@@ -116,7 +116,7 @@ def test_no_evidence_keeps_the_full_pull():
     s = _cv_scores(X, y)
     idx = np.random.default_rng(3).permutation(len(y))
     lab, unl = idx[:300], idx[300:450]
-    est = PriorEstimator(n_resamples=0).fit(s[lab], y[lab])
+    est = PriorEstimator().fit(s[lab], y[lab])
     res = est.estimate(s[unl])
     assert res.shift_statistic < 3.84 and res.pseudo_rows == 20.0
     ref = em_prior(est.calibrate(s[unl]), est.source_prior_, prior_strength=20.0, tol=1e-9)
@@ -131,6 +131,25 @@ def test_no_evidence_keeps_the_full_pull():
                              pvalue=0.083, alpha=0.05) == 20.0
     assert evidence_strength(20.0, p[:8], np.ones(8), est.source_prior_, 3.0, 1,
                              pvalue=0.04, alpha=0.05) == few
+
+
+def test_a_shrunk_estimate_the_data_allow_keeps_the_full_pull():
+    # a strong shift (breast cancer, 150 unlabelled rows at about 30 % benign against 63 %
+    # labelled) whose 20-pseudo-row estimate lies inside the interval of the shares: nothing
+    # conflicts, so nothing changes (the benchmark's evidence cells, likewise, are unchanged)
+    X, y = load_breast_cancer(return_X_y=True)
+    s = _cv_scores(X, y)
+    rng = np.random.default_rng(5)
+    idx = rng.permutation(len(y))
+    lab, rest = idx[:250], idx[250:]
+    unl = np.concatenate([rest[y[rest] == 1][:45], rest[y[rest] == 0][:105]])
+    est = PriorEstimator().fit(s[lab], y[lab])
+    res = est.estimate(s[unl])
+    assert res.shift_pvalue < 1e-6
+    assert res.ml_interval[1, 0] <= res.prior[1] <= res.ml_interval[1, 1]
+    assert res.pseudo_rows == 20.0
+    ref = em_prior(est.calibrate(s[unl]), est.source_prior_, prior_strength=20.0, tol=1e-9)
+    np.testing.assert_allclose(res.prior, ref.prior, atol=2e-6)
 
 
 def test_three_classes_absent_class_stays_inside():

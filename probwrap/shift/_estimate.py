@@ -73,8 +73,9 @@ class PriorEstimate:
         (Since 4 December 2026 the shrunk ``prior`` is kept inside ``ml_interval``: see
         ``pseudo_rows``.)
     pseudo_rows : float or None
-        EM methods with ``prior_strength > 0``: the Dirichlet pseudo-rows the shrunk ``prior``
-        was computed with, ``prior_strength`` faded by the evidence of a shift
+        EM methods: the Dirichlet pseudo-rows the shrunk ``prior`` was computed with —
+        ``prior_strength``, or, where the data reject the estimate with that many (it lay
+        outside ``ml_interval``), the count faded by the evidence of a shift
         (:func:`evidence_strength`). None for other methods.
     null_harm_scale : float or None
         Expected relative increase of the log loss, when nothing moved, per unit of

@@ -561,9 +561,7 @@ class PriorEstimator(_Resampling):
         test = _score_stat_moments((m_t, c_t, n_eff), _current_source_score(source_score), k,
                                     pooled=True, source_prior=src)
         stat, pvalue = test.statistic, test.pvalue
-        pseudo = None
-        if self.method == "em":
-            point, pseudo = self._fade_pull(point, p, wk, src, stat, pvalue)
+        pseudo = float(getattr(self, "prior_strength", 0.0)) if self.method == "em" else None
         harm_scale = null_harm_scale(p, w, src, test.mean_cov,
                                      reference_loss=getattr(self, "_source_log_loss", None))
         if ml is not None and harm_scale:
@@ -652,9 +650,13 @@ class PriorEstimator(_Resampling):
                 if ml is not None:
                     ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
-        if ml is not None and ml_bounds is not None and point.identified:
-            # the shrunk estimate stays among the shares the data allow (see _inside)
-            point, bounds = self._inside(point, ml, ml_bounds, bounds)
+        if ml is not None and ml_bounds is not None and point.identified and not self._within(
+                point.prior, ml_bounds):
+            # the data reject the shrunk estimate at the interval's level: the pseudo-rows
+            # conflict with the rows, and fade with the evidence (_fade_pull); what still lies
+            # outside is moved back to the interval's end (_inside)
+            point, pseudo = self._fade_pull(point, p, wk, src, stat, pvalue)
+            point, bounds = self._inside(point, ml, ml_bounds)
         if ml is not None:
             self._warn_boundary(ml, p, wk, n_eff, pvalue=pvalue, ml_bounds=ml_bounds,
                                 prior=point.prior, pseudo=pseudo)
@@ -740,8 +742,12 @@ class PriorEstimator(_Resampling):
                        distance=float(dist)), used
 
     @staticmethod
-    def _inside(point: PriorEstimate, ml: np.ndarray, ml_bounds: np.ndarray,
-                bounds: np.ndarray) -> tuple[PriorEstimate, np.ndarray]:
+    def _within(x: np.ndarray, bounds: np.ndarray) -> bool:
+        return bool(np.all((x >= bounds[:, 0] - 1e-12) & (x <= bounds[:, 1] + 1e-12)))
+
+    @staticmethod
+    def _inside(point: PriorEstimate, ml: np.ndarray,
+                ml_bounds: np.ndarray) -> tuple[PriorEstimate, np.ndarray]:
         """Keep the shrunk estimate inside the interval of the class shares.
 
         ``ml_bounds`` holds the shares the data do not reject at the interval's level; a shrunk
@@ -757,7 +763,7 @@ class PriorEstimator(_Resampling):
             reach = np.where(d > 0, (hi - ml) / d, np.where(d < 0, (lo - ml) / d, np.inf))
         lam = float(min(1.0, np.min(reach)))
         if lam >= 1.0:
-            return point, bounds
+            return point, np.column_stack([np.minimum(lo, x), np.maximum(hi, x)])
         new = ml + max(lam, 0.0) * d
         new = np.clip(new, 0.0, 1.0)
         new = new / new.sum()
@@ -840,21 +846,30 @@ class PriorEstimator(_Resampling):
             cov = np.linalg.pinv(info) / max(n_eff, 1.0)
         except np.linalg.LinAlgError:  # pragma: no cover
             cov = np.full((src.shape[0] - 1,) * 2, np.inf)
-        j = int(edge[0])
-        # standard error of class j's share: class 0 is minus the sum of the others
-        if j == 0:
-            var = float(np.sum(cov))
-        else:
-            var = float(cov[j - 1, j - 1])
-        se = float(np.sqrt(max(var, 0.0)))
-        worth = src[j] * (1 - src[j]) / max(var * n_eff, 1e-300)
+        def spread(j: int) -> tuple[float, float]:
+            # standard error of class j's share (class 0 is minus the sum of the others) and
+            # each row's worth in labelled rows
+            var = float(np.sum(cov)) if j == 0 else float(cov[j - 1, j - 1])
+            return (float(np.sqrt(max(var, 0.0))),
+                    src[j] * (1 - src[j]) / max(var * n_eff, 1e-300))
+
+        alpha = 1.0 - float(self.confidence_level)
+        # where the data point firmly at the edge, name a class at share 0 (for two classes the
+        # one whose share went to 0, e.g. the prevalence of the command line)
+        zero = edge[ml[edge] <= 1e-3 * src[edge]]
+        j = int(zero[0]) if zero.size else int(edge[0])
+        if not (pvalue is not None and np.isfinite(pvalue) and pvalue < alpha
+                and ml_bounds is not None and prior is not None
+                and not ml_bounds[j, 0] <= src[j] <= ml_bounds[j, 1]):
+            j = int(edge[0])
+        se, worth = spread(j)
         why = (
             "the model separates the classes weakly" if worth < 0.25 else "there are few rows"
         )
-        alpha = 1.0 - float(self.confidence_level)
         if (pvalue is not None and np.isfinite(pvalue) and pvalue < alpha
                 and ml_bounds is not None and prior is not None
                 and not ml_bounds[j, 0] <= src[j] <= ml_bounds[j, 1]):
+            cls = "this class" if ml[j] <= 1e-3 * src[j] else "the other classes"
             pulled = (
                 f"pulled toward the source share by {pseudo:.2g} pseudo-rows (the pull fades as "
                 "the evidence of a shift grows)" if pseudo else "not pulled toward the source"
@@ -867,7 +882,7 @@ class PriorEstimator(_Resampling):
                 f"{ml_bounds[j, 1]:.3g}] excludes the source share, and each of the "
                 f"{n_eff:.4g} effective unlabelled rows carries about {worth:.2g} of a labelled "
                 "row's information about it. Read the edge as a finding (these rows may hold no "
-                "member, or nearly none, of the class at share 0); the reported share "
+                f"member, or nearly none, of {cls}); the reported share "
                 f"{prior[j]:.3g} is {pulled} and lies inside the interval.",
                 BoundaryPriorWarning,
                 stacklevel=3,
