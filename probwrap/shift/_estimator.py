@@ -118,7 +118,10 @@ class PriorEstimator(_Resampling):
     prior_strength : float, default=20.0
         ``method="em"`` only: pseudo-rows of a Dirichlet prior centred on the source prior
         (MAP estimate; see :func:`em_prior`). 0 gives the plain maximum-likelihood estimate.
-        The interval is always built around the maximum-likelihood estimate.
+        The interval is always built around the maximum-likelihood estimate; where the data
+        reject the shrunk estimate (it lies outside that interval), fewer pseudo-rows are used,
+        faded with the evidence of a shift (:func:`~probwrap.shift._estimate.evidence_strength`;
+        ``PriorEstimate.pseudo_rows``), and the estimate is kept inside the interval.
     interval : {"score", "bca", "percentile"}, default="score"
         ``"score"``: for two classes, the inverted two-sample score test
         (:func:`score_interval`; no resampling, both samples' error included, honest at the
@@ -509,7 +512,9 @@ class PriorEstimator(_Resampling):
             one). ``interval`` is the score interval (two classes) or a bootstrap interval over
             Poisson resamples of both the unlabelled and the labelled rows (BCa), built around
             the unpenalised estimate and widened to contain ``prior``; ``ml_interval`` is the
-            same before that widening (the confidence interval of the class shares). ``shift_statistic`` and
+            same before that widening (the confidence interval of the class shares; for
+            ``method="em"`` the shrunk ``prior`` is kept inside it, so the two agree).
+            ``shift_statistic`` and
             ``shift_pvalue`` come from the two-sample score test
             (:func:`shift_score_test`), whatever ``method``. ``n_dropped`` counts resamples
             dropped because a class vanished from the labelled resample (a
