@@ -19,7 +19,6 @@ heart).
 
 from __future__ import annotations
 
-import os
 import warnings
 
 import numpy as np
@@ -197,24 +196,3 @@ def test_wrapper_moves_to_a_share_the_data_allow(sorted_cancer):
     lo, hi = res.ml_interval[1]
     assert lo <= wrapper.target_prior_[1] <= hi
     assert wrapper.target_prior_[1] > 0.95
-
-
-def test_cleveland_heart_sorted_file():
-    # the case as found: pingouin's chi2_independence data (Cleveland heart), logistic
-    # regression's cross-validated scores, the file sorted by label
-    pingouin = pytest.importorskip("pingouin")
-    import pandas as pd
-
-    path = os.path.join(os.path.dirname(pingouin.__file__), "datasets",
-                        "chi2_independence.csv")
-    df = pd.read_csv(path, encoding="utf-8-sig")
-    y = df.pop("target").to_numpy()
-    s = _cv_scores(df.to_numpy(float), y)
-    est = PriorEstimator().fit(s[:200], y[:200])
-    with pytest.warns(BoundaryPriorWarning, match="point there firmly"):
-        res = est.estimate(s[200:])
-    assert y[200:].max() == 0 and res.ml_prior[1] == 0.0
-    lo, hi = res.ml_interval[1]
-    assert lo == 0.0 and 0.1 < hi < 0.2
-    # before: 0.255 = the top of its interval, above the interval of the share
-    assert res.prior[1] < 0.5 * hi
