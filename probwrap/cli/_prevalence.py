@@ -138,6 +138,19 @@ def _warn_out_of_order(col: Any, labels: np.ndarray, args: argparse.Namespace) -
 _NUMBER = re.compile(r"\d+(?:\.\d+)?(?:e[-+]?\d+)?")
 
 
+def _classes_by_label(message: str, names: dict[str, Any]) -> str:
+    """A library message naming the two classes by index ("class index 1", "Class index(es)
+    [1] get ...") with their labels instead (``names``: the negative and positive labels)."""
+    neg, pos = f"the class {names['negative']!r}", f"the class {names['positive']!r}"
+    message = re.sub(r"Class index\(es\) \[0, 1\] get\b", "Both classes get", message)
+    for index, label in (("0", neg), ("1", pos)):
+        one = re.sub(rf"Class index\(es\) \[{index}\] get\b", label[0].upper() + label[1:]
+                     + " gets", message)
+        if one != message:
+            message = one.replace("; their estimated prior rests", "; its estimated share rests")
+    return message.replace("class index 0", neg).replace("class index 1", pos)
+
+
 def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
               seed: int | None, weights: np.ndarray | None = None) -> list[dict[str, Any]]:
     """Each batch's estimate. A warning met in a batch is warned once per kind (messages that
@@ -354,9 +367,7 @@ def _run(args: argparse.Namespace) -> int:
                 ) from None
     names = out.get("labels") or {"negative": "negative", "positive": "positive"}
     for w in caught:  # the library counts classes by index; the user knows them by label
-        w.message = str(w.message).replace(
-            "class index 0", f"the class {names['negative']!r}").replace(
-            "class index 1", f"the class {names['positive']!r}")
+        w.message = _classes_by_label(str(w.message), names)
     report_warnings("prevalence", caught)
     if weights is not None:
         out["weights"] = weight_summary(args.weight_column, weights)
