@@ -677,8 +677,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             return
         warnings.warn(
             "adapt: the base model was refit on the labelled rows, and these unlabelled rows "
-            "(Dask or Spark) are scored by the refit model only, so the interval does not "
-            "carry how much that refit moves with the draw of the labelled rows; with a "
+            "(Dask or Spark) enter this interval through the refit model's scores only, so it "
+            "does not carry how much that refit moves with the draw of the labelled rows; with a "
             "high-variance model on a few hundred rows it can cover several points less than "
             "its level (docs/prior_shift.md, 'A base model refit on the labelled rows'). It is "
             "carried on rows in memory (every interval) and on Dask or Spark rows except more "
