@@ -394,7 +394,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         return prior
 
     # -- fitting ---------------------------------------------------------------------------------
-    def fit(self, X: Any, y: Any, sample_weight: Any = None, **fit_params: Any) -> PriorShiftWrapper:
+    def fit(self, X: Any, y: Any, sample_weight: Any = None, *, cells: Any = None,
+            **fit_params: Any) -> PriorShiftWrapper:
         """Fit the estimator (cross-fitted), the calibration and the source summary.
 
         Parameters
@@ -416,6 +417,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             same at every scale. A ``WeightScaleWarning`` (once) says when the reading moves
             with the scale: weights that sum to less than the rows, and weights read as
             counts that are not whole numbers or all share a factor above 1.
+        cells : array-like of shape (n,), default=None
+            The cell of every row for outcomes aggregated as counts (``k`` of ``n``: a group's
+            success row and failure row share one; :func:`probwrap.aggregated.expand_counts`).
+            The shift test and the interval then count each cell as one unit (the labelled
+            mean score's variance clustered on the cells, the bootstrap drawing whole cells;
+            docs/prior_shift.md, "Counts (k of n)"). When not given, weighted rows with
+            identical features and different labels (2-d arrays and DataFrames; the rule the
+            folds use) are taken as cells; unweighted rows are never grouped here.
         **fit_params : dict
             Further parameters for the estimator's ``fit``.
 
@@ -437,6 +446,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 self._warn_weight_reading(kept[2])
             self._source_tally = None
             return self._finish_fit(est)
+        if cells is not None:
+            from .shift._cells import check_cells
+
+            check_cells(cells, _num_rows(X))
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
         self._warn_few_class_rows(ho.class_row_counts(ho.sample_weight))
         if sample_weight is not None and not ho.from_tally:
@@ -456,7 +469,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         refit = (not ho.from_tally and ho.n_folds >= 2
                  and getattr(self, "_fold_models", None) is not None)
         est.fit(ho.values, ho.y_index, ho.sample_weight, effective_rows=rows,
-                class_names=self.classes_, source_fold=ho.fold if refit else None)
+                class_names=self.classes_, source_fold=ho.fold if refit else None,
+                cells=None if ho.from_tally else _count_cells(cells, ho, sample_weight))
         if ho.n_folds >= 2 and est.calibrator_ is not None:
             # A base model refit here: the likelihood-ratio test judged the fold models'
             # held-out probabilities, not the refit model's that predict_proba would return,
@@ -466,7 +480,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # test log loss over scikit-learn's sigmoid 0.860 -> 0.841, cells above 1.10x 47 -> 38.
             est.calibrator_.identity_kept_ = False
         self._source_tally = self.tally_ if ho.from_tally else None
-        if (not ho.from_tally and not self.keep_heldout
+        if (not ho.from_tally and not self.keep_heldout and est._src_cells is None
                 and np.count_nonzero(ho.sample_weight) > SMALL_HELDOUT_ROWS):
             # many rows: keep a tally of them for the intervals, not the rows (keep_heldout);
             # more classes with the analytic interval keep only its labelled summary
@@ -572,7 +586,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 f"{n_in} features as input (the number it was fitted on)."
             )
 
-    def adapt(self, X: Any, sample_weight: Any = None) -> PriorShiftWrapper:
+    def adapt(self, X: Any, sample_weight: Any = None, *, cells: Any = None) -> PriorShiftWrapper:
         """Estimate the class priors of unlabelled rows and adjust to them.
 
         Parameters
@@ -587,6 +601,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             integer weights are not read as duplicated rows (pass the rows duplicated if they
             really are independent copies; see
             docs/prior_shift.md, "How sure is the estimate, and has anything moved?").
+        cells : array-like of shape (n,), default=None
+            The cell of every row (rows of one aggregated group share one): the shift test and
+            the interval then count each cell as one unit, as ``fit(cells=...)`` does for the
+            labelled rows (docs/prior_shift.md, "Counts (k of n)"). Rows in memory only.
 
         Returns
         -------
@@ -611,6 +629,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         source = getattr(self, "_source_tally", None)
         target = None
         multiclass = self.classes_.shape[0] > 2
+        if cells is not None and (_is_dask(X) or _is_dask(sample_weight) or source is not None):
+            raise ValueError(
+                "`cells` is supported for rows in memory fitted in memory only; these rows (or "
+                "the labelled rows fitted) are Dask or Spark data reduced to a tally, which "
+                "keeps no cells. Collect the rows, or leave `cells` out."
+            )
         if multiclass and (_is_dask(X) or _is_dask(sample_weight)):
             # Multiclass Dask rows: EM / BBSE as reductions over the calibrated posteriors on
             # the workers (one pass per EM iteration); with the analytic interval (EM).
@@ -657,7 +681,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         else:
             rows = None if target is None else _tally_rows(target)
             res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
-                               fold_proba=folds)
+                               fold_proba=folds, cells=cells)
             interval = res.interval
         return self._finish_adapt(res, interval)
 
@@ -890,3 +914,27 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if _is_dask(X):
             return self._dask_predict(self.predict, X, None, self.classes_.dtype)
         return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
+
+
+def _num_rows(X: Any) -> int:
+    return int(X.shape[0]) if hasattr(X, "shape") else len(X)
+
+
+def _count_cells(cells: Any, ho: Any, sample_weight: Any) -> Any:
+    """The labelled rows' cells for the prior estimate: ``cells`` as given; otherwise, with
+    weights, the cells the folds found (``ho.cells``) where some cell holds rows of two labels
+    (counts ``k`` of ``n``, a frequency table), else None (rows are their own units)."""
+    if cells is not None:
+        return cells
+    found = getattr(ho, "cells", None)
+    if sample_weight is None or found is None:
+        return None
+    codes = np.asarray(found, dtype=np.intp)
+    y = np.asarray(ho.y_index, dtype=np.intp)
+    if codes.shape != y.shape:
+        return None
+    lo = np.full(int(codes.max()) + 1, np.iinfo(np.intp).max)
+    hi = np.full(lo.shape[0], -1)
+    np.minimum.at(lo, codes, y)
+    np.maximum.at(hi, codes, y)
+    return codes if bool(np.any(hi > lo)) else None

@@ -99,6 +99,23 @@ class GroupCheck:
     false_positive_rate: float = float("nan")
     false_negative_rate: float = float("nan")
     mean_cost: float = float("nan")
+    #: with ``cells``: the group's cells, and its cells holding positive / negative rows (the
+    #: units the judged rule counts then); None without cells
+    cells: tuple[int, int, int] | None = None
+
+
+def cell_sizes(y: np.ndarray, w: np.ndarray, cells: np.ndarray | None,
+               classes: Any = (0.0, 1.0)) -> tuple[int, ...] | None:
+    """Cells with positive weight, then those holding positive weight of each class in
+    ``classes`` (None without ``cells``): the units a group is judged on when outcomes come as
+    counts, since a cell's trials are not independent rows."""
+    if cells is None:
+        return None
+    live = w > 0
+    out = [int(np.unique(cells[live]).shape[0])]
+    for c in classes:
+        out.append(int(np.unique(cells[live & (y == c)]).shape[0]))
+    return tuple(out)
 
 
 @dataclass(frozen=True)
@@ -317,6 +334,11 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
     neg = w * (1.0 - y)
     eff_rows, eff_pos, eff_neg = judged_sizes(w, y)
     judged = eff_rows >= min_rows and eff_pos >= min_events and eff_neg >= min_events
+    units = cell_sizes(y, w, cells, (1.0, 0.0))
+    if units is not None:
+        # counts: the cells are the independent units, so they must reach the sizes too (two
+        # cells of 10,000 trials are two observations of a rate, not 10,000 rows)
+        judged = judged and units[0] >= min_rows and min(units[1:]) >= min_events
     total = float(w.sum())
     both = pos.sum() > 0 and neg.sum() > 0
 
@@ -370,6 +392,7 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
         log_loss=_safe(notes, label, log_loss, y, p, sample_weight=w, labels=[0.0, 1.0]),
         log_loss_interval=_interval(notes, label, log_loss, y, p, w, n_resamples, level, seed,
                                     cells),
+        cells=units,
         **decision,
     )
 
@@ -402,7 +425,9 @@ def calibration_by_group(
     first.
 
     A group is *judged* when it holds at least ``min_rows`` rows and ``min_events`` rows of each
-    class, counted with the weights as row frequencies (see ``sample_weight``). Smaller
+    class, counted with the weights as row frequencies (see ``sample_weight``), and, with
+    ``cells``, at least ``min_rows`` cells and ``min_events`` cells holding rows of each class
+    (``GroupCheck.cells``). Smaller
     groups are still listed with every number that can be computed, flagged ``judged=False``,
     and left out of the gaps: a gap between two tiny groups is mostly noise. The defaults (100
     rows, 10 of each class) are common practice, not a law; a precise check of the slope needs
@@ -449,7 +474,8 @@ def calibration_by_group(
         do. Resampling the rows breaks each cell into its successes alone or its failures
         alone: on statsmodels' star98 (303 districts in three groups) the rows' Brier-score
         intervals are 2.7-8.6 times as wide as statsmodels' cluster-robust ones, the cells'
-        0.90-1.08 times. None: rows, as before, draw for draw.
+        0.90-1.08 times. None: rows, as before, draw for draw. With cells a group is judged
+        only when its cells, not only its trials, reach ``min_rows`` and ``min_events``.
 
     Examples
     --------
@@ -526,7 +552,8 @@ def calibration_by_group(
     if small:
         notes.append(
             f"{len(small)} group(s) below {min_rows:g} rows or {min_events:g} of a class "
-            "are listed but not judged: " + ", ".join(str(c.group) for c in small) + "."
+            + ("(counting cells, and trials) " if cell_codes is not None else "")
+            + "are listed but not judged: " + ", ".join(str(c.group) for c in small) + "."
         )
     if any(np.isfinite(c.brier_interval[0]) for c in small):
         notes.append(

@@ -28,6 +28,7 @@ from ..metrics._groups import (
     MIN_ROWS,
     GroupGap,
     cell_labels,
+    cell_sizes,
     check_group_labels,
     gap_with_interval,
 )
@@ -87,6 +88,9 @@ def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, l
     rarest = float(min(eff_class)) if eff_class else 0.0
     eff = float(w.sum())
     judged = eff >= min_rows and rarest >= min_events
+    units = cell_sizes(y, w, cells, classes_present)
+    if units is not None:  # counts: the cells must reach the sizes too (calibration_by_group)
+        judged = judged and units[0] >= min_rows and min(units[1:], default=0) >= min_events
     nan = float("nan")
 
     def value(fn, **kw):

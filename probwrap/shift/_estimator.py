@@ -24,6 +24,7 @@ from ._analytic import (
     moment_prior_interval,
 )
 from ._calibration import BiasCorrectedScaling, choose_tail, tail_log_scores
+from ._cells import cell_mean_cov, check_cells
 from ._confusion import acc_prior, bbse_prior, heldout_confusion
 from ._estimate import (
     BoundaryPriorWarning,
@@ -77,6 +78,36 @@ def _current_source_score(source_score: Any) -> Any:
     if source_score is None or isinstance(source_score[1], tuple):
         return source_score
     return source_score[0], ((source_score[1], float("inf")),)
+
+
+def _cell_moments(u: np.ndarray, w: np.ndarray, codes: np.ndarray) -> tuple:
+    """The labelled side of the shift test with the rows of a cell one unit: the mean score and
+    one variance component, its cluster-robust covariance on the cells' count."""
+    mean, cov, g = cell_mean_cov(u, w, codes)
+    return mean, ((cov / max(g - 1.0, 1.0), g),)
+
+
+def _cell_floor_rows(p: np.ndarray, w: np.ndarray, codes: np.ndarray) -> float:
+    """Rows whose binomial error, ``m (1 - m) / n``, equals the clustered (cells) variance of
+    the mean calibrated posterior ``m`` of a class (the smallest such count over the classes).
+
+    With calibrated posteriors a class's indicator has the posterior as its mean given the
+    features, so the clustered variance of the share of the class is at least that of the
+    mean posterior: this count is at least the cells' design-effective count of the labels,
+    and a Clopper-Pearson floor on it (:func:`_widen`) is never wider than the cells' own
+    error. (Kish's count of the rows, the floor without cells, can be far smaller: 59.6 rows
+    for statsmodels' star98 districts, whose clustered error of the pass rate is that of
+    about 340 independent pupils.)"""
+    mean, cov, g = cell_mean_cov(p, w, codes)
+    var = np.diag(np.atleast_2d(cov)) / max(g - 1.0, 1.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rows = np.where(var > 0, mean * (1.0 - mean) / var, np.inf)
+    return float(min(np.min(rows), 1e12))
+
+
+def _source_cells(est: Any) -> np.ndarray | None:
+    """Cell codes of the kept labelled rows (None: rows are their own units, or none kept)."""
+    return getattr(est, "_src_cells", None)
 
 
 def _kish(w: np.ndarray) -> float:
@@ -226,7 +257,7 @@ class PriorEstimator(_Resampling):
     # -- fitting -------------------------------------------------------------------------------
     def fit(
         self, proba: Any, y: Any, sample_weight: Any = None, *, effective_rows: float | None = None,
-        class_names: Any = None, source_fold: Any = None,
+        class_names: Any = None, source_fold: Any = None, cells: Any = None,
     ) -> PriorEstimator:
         """Learn from held-out posteriors ``proba`` (n, k) and class indices ``y`` in 0..k-1.
 
@@ -236,7 +267,11 @@ class PriorEstimator(_Resampling):
         otherwise name them by column index. ``source_fold`` (one integer per row, 0 .. K - 1,
         K >= 2) says which of K fold models of a cross-fitted model gave each row's posterior;
         :meth:`estimate` then takes the unlabelled rows' posteriors from every fold model too
-        (``fold_proba``) for the score interval (see :func:`score_interval`).
+        (``fold_proba``) for the score interval (see :func:`score_interval`). ``cells`` (one
+        label per row; aggregated counts, e.g. the success and failure rows of a group from
+        :func:`probwrap.aggregated.expand_counts`) makes the rows of a cell one unit for the
+        shift test and the intervals: the labelled mean score's variance is clustered on the
+        cells (:mod:`probwrap.shift._cells`) and the bootstrap draws whole cells.
         """
         self._check_params()
         p = check_proba(proba, name="proba", ndim=2)
@@ -258,6 +293,7 @@ class PriorEstimator(_Resampling):
         self._src = (p.copy(), np.asarray(y_idx, dtype=int), w)
         self._src_rows = None  # rows behind each entry of _src (None: one row each)
         self._src_fold = self._check_source_fold(source_fold, p.shape[0])
+        self._src_cells = check_cells(cells, p.shape[0])
         self._boot = None
         self.n_classes_ = k
         self.n_source_effective_ = float(effective_rows) if effective_rows else _kish(w)
@@ -270,7 +306,8 @@ class PriorEstimator(_Resampling):
         self._source_score = _source_moments(
             _score_rows(p_cal, self.source_prior_), w, None,
             self.source_prior_, effective_rows,
-        )
+        ) if self._src_cells is None else _cell_moments(
+            _score_rows(p_cal, self.source_prior_), w, self._src_cells)
         # the labelled rows' own log loss of the calibrated posteriors: the evidence gate's
         # harm is relative to the log loss, and the posteriors' entropy alone overstates it
         # where a calibration fitted on few rows leaves them underconfident
@@ -475,6 +512,7 @@ class PriorEstimator(_Resampling):
         effective_rows: float | None = None,
         interval: bool = True,
         fold_proba: Any = None,
+        cells: Any = None,
     ) -> PriorEstimate:
         """Estimate the class priors of unlabelled rows.
 
@@ -503,6 +541,16 @@ class PriorEstimator(_Resampling):
             interval is the bootstrap) then resample every unlabelled row once per fold model,
             weighted by the fold's share (since 4 December 2026; before, they read ``proba``).
             Ignored without ``source_fold`` or once the labelled rows are kept as a tally.
+        cells : array-like of shape (n,), default=None
+            The cell of every unlabelled row (aggregated counts: a group's success and failure
+            rows share one). The shift test and the intervals then count each cell as one unit
+            (the variance of the mean score clustered on the cells, with the cells' count as
+            its degrees of freedom; the bootstrap draws whole cells), as ``fit(cells=...)``
+            does for the labelled rows; either side may have cells without the other. With
+            cells on either side the shift test compares the two means with separate variances
+            (Welch) instead of one pooled covariance, and the floor of the interval
+            (:func:`_widen`) counts at least one row per unlabelled cell. With labelled cells
+            and more than two classes the interval is the BCa bootstrap over whole cells.
 
         Returns
         -------
@@ -532,6 +580,8 @@ class PriorEstimator(_Resampling):
         w = check_sample_weight(sample_weight, p_raw.shape[0])
         if sample_weight is not None:
             w = rescale_extreme_weights(w, "PriorEstimator.estimate", stacklevel=3)
+        cell_t = check_cells(cells, p_raw.shape[0])
+        cell_s = _source_cells(self)
         n_eff = float(effective_rows) if effective_rows else _kish(w)
         if n_eff < FEW_ROWS:
             warnings.warn(
@@ -561,10 +611,14 @@ class PriorEstimator(_Resampling):
             kept = self._source_rows()
             share = fold_shares(refit[1], kept[1], kept[2], refit[0].shape[0])[0]
             u_t = np.tensordot(share, np.stack([_score_rows(f, src) for f in refit[0]]), axes=1)
-        m_t, c_t, _ = _mean_cov(u_t, w)
+        if cell_t is None:
+            m_t, c_t, _ = _mean_cov(u_t, w)
+            n_test = n_eff
+        else:  # the unlabelled rows' mean score clustered on their cells
+            m_t, c_t, n_test = cell_mean_cov(u_t, w, cell_t)
         source_score = getattr(self, "_source_score", None)
-        test = _score_stat_moments((m_t, c_t, n_eff), _current_source_score(source_score), k,
-                                    pooled=True, source_prior=src)
+        test = _score_stat_moments((m_t, c_t, n_test), _current_source_score(source_score), k,
+                                    pooled=cell_t is None and cell_s is None, source_prior=src)
         stat, pvalue = test.statistic, test.pvalue
         pseudo = float(getattr(self, "prior_strength", 0.0)) if self.method == "em" else None
         harm_scale = null_harm_scale(p, w, src, test.mean_cov,
@@ -577,6 +631,10 @@ class PriorEstimator(_Resampling):
                 (ml - src)[1:], (u * (w / w.sum())[:, None]).T @ u, test.mean_cov, test.raw
             )
         bounds, dropped, ml_bounds = None, 0, None
+        # the interval's floor (_widen): Kish's count of the unlabelled rows; with cells the
+        # count whose binomial error equals the clustered error of the mean posterior, which is
+        # at most the labels' own (_cell_floor_rows), so the floor stays below the cells' error
+        n_floor = n_eff if cell_t is None else max(n_eff, _cell_floor_rows(p, w, cell_t))
         if self.n_resamples > 0 and interval:
             self._warn_few_labelled(n_src)
             source = self._source_rows()
@@ -590,6 +648,7 @@ class PriorEstimator(_Resampling):
                     centre=float((ml if ml is not None else point.prior)[1]),
                     fold_proba=None if refit is None else refit[0],
                     source_fold=None if refit is None else refit[1],
+                    cells=cell_t, source_cells=cell_s,
                 )
                 if not consistent:
                     warnings.warn(
@@ -604,10 +663,10 @@ class PriorEstimator(_Resampling):
                 bounds = np.array([[1.0 - hi, 1.0 - lo], [lo, hi]])
                 centre = ml if ml is not None else point.prior
                 if ml is not None:
-                    ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
-                bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
+                    ml_bounds = _widen(bounds, ml, ml, n_floor, self.confidence_level)
+                bounds = _widen(bounds, point.prior, centre, n_floor, self.confidence_level)
             elif getattr(self, "interval", "score") == "score" and ml is not None and (
-                    self._class_score_moments() is not None):
+                    cell_s is None) and (self._class_score_moments() is not None):
                 # more than two classes: the labelled rows' class-conditional mean scores
                 # re-weighted to the shares (moment_prior_interval); the delta method on EM's
                 # fixed point missed under real shifts where the calibration errs on new rows
@@ -619,13 +678,14 @@ class PriorEstimator(_Resampling):
                     w_fold = fold_shares(refit[1], source[1], source[2], refit[0].shape[0])[1]
                     moments = class_score_moments(class_score_sums(
                         self.calibrate(source[0]), source[1], w_fold, src))
-                found = moment_prior_interval((m_t, c_t, n_eff), moments, self.confidence_level)
+                found = moment_prior_interval((m_t, c_t, n_test), moments,
+                                              self.confidence_level)
                 bounds = (np.column_stack([np.zeros(k), np.ones(k)]) if found is None
                           else found[0])
-                ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
-                bounds = _widen(bounds, point.prior, ml, n_eff, self.confidence_level)
+                ml_bounds = _widen(bounds, ml, ml, n_floor, self.confidence_level)
+                bounds = _widen(bounds, point.prior, ml, n_floor, self.confidence_level)
             elif getattr(self, "interval", "score") == "score" and ml is not None and (
-                    self._eta_cov() is not None):
+                    cell_t is None and cell_s is None) and (self._eta_cov() is not None):
                 # an estimator fitted before the class moments were kept, without its rows:
                 # the delta method on the EM fixed point, with the labelled rows' error
                 # through the calibration and the source prior
@@ -648,13 +708,15 @@ class PriorEstimator(_Resampling):
                         stacklevel=2,
                     )
                 if refit is None:
-                    bounds, dropped = self._bootstrap(p_raw, w, centre, check_random_state(rs))
+                    bounds, dropped = self._bootstrap(p_raw, w, centre, check_random_state(rs),
+                                                      cells=cell_t)
                 else:
                     bounds, dropped = self._refit_bootstrap(
-                        fold_proba, refit[0], share, w, n_eff, centre, check_random_state(rs))
+                        fold_proba, refit[0], share, w, n_eff, centre, check_random_state(rs),
+                        cells=cell_t)
                 if ml is not None:
-                    ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
-                bounds = _widen(bounds, point.prior, centre, n_eff, self.confidence_level)
+                    ml_bounds = _widen(bounds, ml, ml, n_floor, self.confidence_level)
+                bounds = _widen(bounds, point.prior, centre, n_floor, self.confidence_level)
         if ml is not None and ml_bounds is not None and point.identified and not self._within(
                 point.prior, ml_bounds):
             # the data reject the shrunk estimate at the interval's level: the pseudo-rows
@@ -688,6 +750,7 @@ class PriorEstimator(_Resampling):
     def _refit_bootstrap(
         self, fold_proba: Any, fold_calibrated: np.ndarray, share: np.ndarray, w: np.ndarray,
         n_eff: float, centre: np.ndarray, rng: np.random.RandomState,
+        cells: np.ndarray | None = None,
     ) -> tuple[np.ndarray, int]:
         """The bootstrap interval of a base model refit on the labelled rows, from the fold
         models' posteriors of the unlabelled rows (``fold_proba``, raw; ``fold_calibrated``,
@@ -726,7 +789,7 @@ class PriorEstimator(_Resampling):
                 fold_centre = self._point(
                     p, wk, src, self.confusion_, self.soft_confusion_,
                     n_source=getattr(self, "n_source_effective_", None)).prior
-        return self._bootstrap(raw, stacked_w, fold_centre, rng, copies=copies)
+        return self._bootstrap(raw, stacked_w, fold_centre, rng, copies=copies, cells=cells)
 
     def _fade_pull(self, point: PriorEstimate, p: np.ndarray, wk: np.ndarray, src: np.ndarray,
                    stat: float | None, pvalue: float | None,

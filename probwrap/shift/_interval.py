@@ -174,6 +174,8 @@ def score_interval(
     small_sample: bool = True,
     fold_proba: Any = None,
     source_fold: Any = None,
+    cells: Any = None,
+    source_cells: Any = None,
 ) -> tuple[np.ndarray, bool]:
     r"""Two-sample score interval for the positive-class prior of unlabelled rows (two classes).
 
@@ -220,6 +222,15 @@ def score_interval(
     Definition 3.2, DML2), whose error is the two samples' sampling error to first order for
     any model, because the condition holds for every fixed model.
 
+    With ``cells`` / ``source_cells`` (aggregated counts: the rows of one group share a cell)
+    a side's variance is the cluster-robust (sandwich) variance of its mean with the cells as
+    clusters, known to ``cells - 1`` degrees of freedom (:mod:`probwrap.shift._cells`; Liang &
+    Zeger 1986): on the labelled side the influence of each cell on the share-weighted class
+    means, :math:`h_g = \sum_c \pi_c \sum_{i \in g, y_i = c} \tilde w_i (f_i - \bar f_c)`
+    with :math:`\tilde w` the weights normalised within each class, so a cell's success and
+    failure rows count together. The rows of a cell are then one unit, however many trials
+    their weights count.
+
     Parameters
     ----------
     proba : array-like of shape (n, 2)
@@ -248,6 +259,9 @@ def score_interval(
     source_fold : array-like of shape (m,), default=None
         Fold (0 .. n_folds - 1) whose model gave each labelled row's posterior; required with
         ``fold_proba``.
+    cells, source_cells : array-like of shape (n,) / (m,), default=None
+        The cell (group of aggregated counts) of every unlabelled / labelled row; that side's
+        variance is then clustered on its cells (above). None: every row is its own unit.
 
     Returns
     -------
@@ -310,6 +324,17 @@ def score_interval(
             n_c = float(wc.sum() ** 2 / np.dot(wc, wc))
         strata.append((q_s[rows, 0], q_s[rows, 1] - q_s[rows, 0], wc / wc.sum(), n_c))
 
+    from ._cells import cell_sums, check_cells
+
+    cell_t = check_cells(cells, p_t.shape[0], "cells")
+    cell_s = check_cells(source_cells, p_s.shape[0], "source_cells")
+    if cell_t is not None:
+        g_t = float(np.count_nonzero(cell_sums(w_t, cell_t) > 0))
+        n_t = g_t
+    if cell_s is not None:
+        g_s = float(np.count_nonzero(cell_sums(w_s, cell_s) > 0))
+        rows_of = [np.flatnonzero(y_s == c) for c in (0, 1)]
+
     level = float(confidence_level)
 
     def stat(t: np.ndarray) -> np.ndarray:
@@ -329,20 +354,33 @@ def score_interval(
                 for s_k, a_k, d_k in zip(share_f, a_f, d_f, strict=True):
                     u_t += s_k * d_k[:, None] / np.maximum(a_k[:, None] + tc * d_k[:, None], tiny)
             m_t = wt @ u_t
-            v_t = np.maximum(wt @ (u_t * u_t) - m_t**2, 0.0)
+            if cell_t is None:
+                v_t = np.maximum(wt @ (u_t * u_t) - m_t**2, 0.0)
+                comp = v_t / max(n_t - 1.0, 1.0)
+            else:  # clustered on the unlabelled cells (G / (G - 1) sum of squared cell sums)
+                s_t = cell_sums((u_t - m_t) * wt[:, None], cell_t)
+                comp = g_t / max(g_t - 1.0, 1.0) * np.sum(s_t * s_t, axis=0)
             m_s = np.zeros(tc.shape[0])
-            comp = v_t / max(n_t - 1.0, 1.0)
             var = comp
             spread = comp**2 / max(n_t - 1.0, 1.0)
+            h_s = None if cell_s is None else np.zeros((p_s.shape[0], tc.shape[0]))
             for c, (a_c, d_c, w_c, n_c) in enumerate(strata):
                 share = tc if c == 1 else 1.0 - tc
                 u_c = d_c[:, None] / np.maximum(a_c[:, None] + tc * d_c[:, None], tiny)
                 m_c = w_c @ u_c
-                v_c = np.maximum(w_c @ (u_c * u_c) - m_c**2, 0.0)
                 m_s = m_s + share * m_c
+                if h_s is not None:  # this class's rows' influence, summed by cell below
+                    h_s[rows_of[c]] = share * (u_c - m_c) * w_c[:, None]
+                    continue
+                v_c = np.maximum(w_c @ (u_c * u_c) - m_c**2, 0.0)
                 comp = share**2 * v_c / max(n_c - 1.0, 1.0)
                 var = var + comp
                 spread = spread + comp**2 / max(n_c - 1.0, 1.0)
+            if h_s is not None:
+                s_s = cell_sums(h_s, cell_s)
+                comp = g_s / max(g_s - 1.0, 1.0) * np.sum(s_s * s_s, axis=0)
+                var = var + comp
+                spread = spread + comp**2 / max(g_s - 1.0, 1.0)
             raw = (m_t - m_s) ** 2 / np.maximum(var, 1e-300)
             if small_sample:
                 nu = np.where(spread > 0, var**2 / np.maximum(spread, 1e-300), np.inf)

@@ -211,8 +211,13 @@ class _Resampling:
         centre: np.ndarray,
         rng: np.random.RandomState,
         copies: int = 1,
+        cells: np.ndarray | None = None,
     ) -> tuple[np.ndarray, int]:
         """Bootstrap interval around ``centre`` from ``n_resamples`` Poisson resamples.
+
+        ``cells`` (codes ``0 .. G - 1`` of the unlabelled rows), and the labelled rows' cells
+        given to ``fit``: every row of a cell gets its cell's Poisson count, so whole cells
+        are drawn (and the jackknife leaves whole cells out).
 
         ``copies`` > 1: ``p_raw`` and ``w`` hold the unlabelled rows ``copies`` times over, one
         block per fold model of a base model refit on the labelled rows (each block that fold
@@ -230,14 +235,22 @@ class _Resampling:
         # all resample weights drawn up front, labelled then unlabelled, so a seed fixes both
         gen = np.random.default_rng(rng.randint(2**31 - 1))
         rows = self._source_row_counts() if resample_source else None
-        if rows is None:
+        src_cells = getattr(self, "_src_cells", None) if resample_source else None
+        if rows is None and src_cells is not None:
+            # whole labelled cells: one Poisson count per cell, shared by its rows
+            src_counts = gen.poisson(1.0, size=(B, int(src_cells.max()) + 1))[:, src_cells]
+            unit = ws
+        elif rows is None:
             src_counts = gen.poisson(1.0, size=(B, ws.shape[0])) if resample_source else None
             unit = ws
         else:
             # tallied labelled rows: a bin of c rows holds Poisson(c) rows of a resample
             src_counts = gen.poisson(rows, size=(B, ws.shape[0]))
             unit = ws / rows
-        tgt_counts = gen.poisson(1.0, size=(B, n))
+        if cells is None:
+            tgt_counts = gen.poisson(1.0, size=(B, n))
+        else:
+            tgt_counts = gen.poisson(1.0, size=(B, int(cells.max()) + 1))[:, cells]
 
         def draw_source(b: int) -> np.ndarray | None:
             return None if src_counts is None else src_counts[b] * unit
@@ -249,7 +262,8 @@ class _Resampling:
         draws, dropped = self.replicate_draws(p_raw, draw_source, draw_target, B, centre)
         jack = None
         if self.interval == "bca" and draws.shape[0] > 0:
-            jack = self._jackknife(p_raw, w, centre, ws, rng, copies)
+            jack = self._jackknife(p_raw, w, centre, ws, rng, copies,
+                                   cells=(cells, src_cells))
         bounds = _interval_from_draws(
             centre, draws, jack, self.confidence_level, dropped, B, k,
         )
@@ -263,19 +277,25 @@ class _Resampling:
         ws: np.ndarray | None,
         rng: np.random.RandomState,
         copies: int = 1,
+        cells: tuple = (None, None),
     ) -> list[np.ndarray]:
         """Leave-one-group-out estimates per sample (target rows; labelled rows when resampled);
-        with ``copies`` > 1 (see :meth:`_bootstrap`) a target row's copies share its group."""
+        with ``copies`` > 1 (see :meth:`_bootstrap`) a target row's copies share its group, and
+        with ``cells`` (target, labelled cell codes or None) a cell's rows share theirs."""
         out = []
         samples = [("target", w)] + ([("source", ws)] if ws is not None else [])
         for name, weights in samples:
             times = int(copies) if name == "target" else 1
             n = weights.shape[0] // times
-            groups = min(JACKKNIFE_GROUPS, n)
+            codes = cells[0] if name == "target" else cells[1]
+            units = n if codes is None else int(codes.max()) + 1
+            groups = min(JACKKNIFE_GROUPS, units)
             if groups < 2:
                 continue
-            label = np.empty(n, dtype=int)
-            label[rng.permutation(n)] = np.arange(n) % groups
+            label = np.empty(units, dtype=int)
+            label[rng.permutation(units)] = np.arange(units) % groups
+            if codes is not None:
+                label = label[codes]
             if times > 1:
                 label = np.tile(label, times)
             values = []

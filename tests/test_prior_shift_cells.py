@@ -1,0 +1,224 @@
+"""The shift test and the prevalence interval with outcomes aggregated as counts (cells).
+
+Outside references: statsmodels' bundled star98 (303 school districts, pupils above / below the
+median in maths) and china_smoking (8 cities, smokers / non-smokers with / without lung cancer);
+statsmodels' ``WLS(...).fit(cov_type="cluster", use_correction=False)`` for the cluster-robust
+(Liang & Zeger 1986) variance of a weighted mean, times ``G / (G - 1)``, and
+``GLM(Binomial).fit(cov_type="HC0")`` on the districts' counts for the cluster-robust error of a
+pass rate (delta method ``p (1 - p) se(logit)``).
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+import statsmodels.api as sm
+from scipy.stats import t as t_dist
+
+from probwrap import PriorShiftWrapper
+from probwrap.aggregated import expand_counts
+from probwrap.metrics import calibration_by_group
+from probwrap.shift import PriorEstimator
+from probwrap.shift._cells import cell_mean_cov, check_cells
+from probwrap.shift._shift_tests import _mean_cov, _score_rows
+
+
+def _statsmodels_cluster_var(v, w, groups):
+    fit = sm.WLS(v, np.ones(v.shape[0]), weights=w).fit(
+        cov_type="cluster", cov_kwds={"groups": groups, "use_correction": False})
+    g = np.unique(groups).shape[0]
+    return float(fit.bse[0] ** 2) * g / (g - 1)
+
+
+@pytest.fixture(scope="module")
+def star98():
+    d = sm.datasets.star98.load_pandas()
+    k = d.endog["NABOVE"].to_numpy(float)
+    n = (d.endog["NABOVE"] + d.endog["NBELOW"]).to_numpy(float)
+    X = d.exog.to_numpy(float)[:, :4]
+    X = (X - X.mean(axis=0)) / X.std(axis=0)
+    Xr, yr, w = expand_counts(X, k, n)
+    assert np.allclose(Xr[::2], X) and np.allclose(Xr[1::2], X)  # a district's two rows
+    cell = np.repeat(np.arange(k.shape[0]), 2)
+    rng = np.random.default_rng(0)
+    labelled = np.zeros(k.shape[0], bool)
+    labelled[rng.permutation(k.shape[0])[: k.shape[0] // 2]] = True
+    return dict(k=k, n=n, X=X, Xr=Xr, y=yr, w=w, cell=cell, labelled=labelled)
+
+
+def _near_exact(y, e=0.02):
+    p1 = np.where(y == 1, 1.0 - e, e)
+    return np.column_stack([1.0 - p1, p1])
+
+
+def test_cell_mean_cov_is_statsmodels_cluster_robust(star98):
+    s = star98
+    rng = np.random.default_rng(1)
+    u = rng.normal(size=s["y"].shape[0]) + s["y"]
+    mean, cov, g = cell_mean_cov(u[:, None], s["w"], s["cell"])
+    assert g == 303
+    assert mean[0] == pytest.approx(np.average(u, weights=s["w"]), rel=1e-12)
+    assert cov[0, 0] / (g - 1) == pytest.approx(
+        _statsmodels_cluster_var(u, s["w"], s["cell"]), rel=1e-9)
+    # every row its own cell, unit weights: the plain cov / (n - 1) of the shift test
+    v = rng.normal(size=(50, 2))
+    m1, c1, n1 = _mean_cov(v, np.ones(50))
+    m2, c2, n2 = cell_mean_cov(v, np.ones(50), np.arange(50))
+    np.testing.assert_allclose(m1, m2, rtol=1e-12)
+    np.testing.assert_allclose(c1 / (n1 - 1), c2 / (n2 - 1), rtol=1e-10)
+
+
+def test_labelled_mean_score_of_the_shift_test_is_clustered_on_star98(star98):
+    s = star98
+    post = _near_exact(s["y"], 0.3)
+    est = PriorEstimator(calibration=None, n_resamples=0).fit(post, s["y"], s["w"],
+                                                              cells=s["cell"])
+    mean, parts = est._source_score
+    (v, g), = parts
+    u = _score_rows(post, est.source_prior_)[:, 0]
+    assert g == 303
+    assert v[0, 0] == pytest.approx(_statsmodels_cluster_var(u, s["w"], s["cell"]), rel=1e-9)
+    # without cells Kish's 59.6 rows: for scores that follow the labels this closely the
+    # standard error is that of the labelled share, 2.4 times the districts' (measured 2.40)
+    plain = PriorEstimator(calibration=None, n_resamples=0).fit(post, s["y"], s["w"])
+    (v0, n0), = plain._source_score[1]
+    assert n0 == pytest.approx(59.585, abs=1e-3)
+    assert np.sqrt(v0[0, 0] / v[0, 0]) == pytest.approx(2.40, abs=0.02)
+
+
+def test_labelled_mean_score_is_clustered_on_china_smoking():
+    d = sm.datasets.china_smoking.load_pandas().data
+    counts = d.to_numpy(float)  # per city: smoker cancer yes/no, non-smoker cancer yes/no
+    rows, y, w, city = [], [], [], []
+    for c in range(counts.shape[0]):
+        for smoker, (yes, no) in ((1.0, counts[c, :2]), (0.0, counts[c, 2:])):
+            rows += [smoker, smoker]
+            y += [1, 0]
+            w += [yes, no]
+            city += [c, c]
+    smoker, y, w, city = map(np.asarray, (rows, y, w, city))
+    p1 = np.where(smoker == 1.0, 0.55, 0.40)  # a model: cancer more likely among smokers
+    post = np.column_stack([1.0 - p1, p1])
+    est = PriorEstimator(calibration=None, n_resamples=0).fit(post, y, w, cells=city)
+    (v, g), = est._source_score[1]
+    u = _score_rows(post, est.source_prior_)[:, 0]
+    assert g == 8
+    assert v[0, 0] == pytest.approx(_statsmodels_cluster_var(u, w, city), rel=1e-9)
+
+
+def test_prevalence_interval_matches_statsmodels_cluster_error_on_star98(star98):
+    """Near-exact posteriors (0.98 for a pupil above the median, 0.02 below): the unlabelled
+    share is then read almost off the labels, and the score interval's half-width is the
+    t quantile times the districts' cluster-robust error of the pass rate (statsmodels GLM
+    Binomial on the unlabelled districts' counts, HC0, times sqrt(G / (G - 1)))."""
+    s = star98
+    lab = s["labelled"][s["cell"]]
+    post = _near_exact(s["y"])
+    ku, nu = s["k"][~s["labelled"]], s["n"][~s["labelled"]]
+    glm = sm.GLM(np.column_stack([ku, nu - ku]), np.ones((ku.shape[0], 1)),
+                 family=sm.families.Binomial()).fit(cov_type="HC0")
+    pu = ku.sum() / nu.sum()
+    g = ku.shape[0]
+    se = pu * (1 - pu) * float(glm.bse[0]) * np.sqrt(g / (g - 1))
+    half = {}
+    for use in (False, True):
+        est = PriorEstimator(random_state=0, prior_strength=0).fit(
+            post[lab], s["y"][lab], s["w"][lab], cells=s["cell"][lab] if use else None)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            res = est.estimate(post[~lab], s["w"][~lab], cells=s["cell"][~lab] if use else None)
+        assert res.prior[1] == pytest.approx(pu, abs=0.005)
+        half[use] = (res.interval[1, 1] - res.interval[1, 0]) / 2
+    crit = t_dist.ppf(0.975, g - 1)
+    assert half[True] / (crit * se) == pytest.approx(1.0, abs=0.06)  # measured 1.01
+    assert half[False] / (crit * se) > 2.0  # Kish's count (and its floor): measured 2.26
+
+
+def test_bootstrap_draws_whole_cells(star98):
+    s = star98
+    lab = s["labelled"][s["cell"]]
+    post = _near_exact(s["y"])
+    ku, nu = s["k"][~s["labelled"]], s["n"][~s["labelled"]]
+    glm = sm.GLM(np.column_stack([ku, nu - ku]), np.ones((ku.shape[0], 1)),
+                 family=sm.families.Binomial()).fit(cov_type="HC0")
+    pu = ku.sum() / nu.sum()
+    se = pu * (1 - pu) * float(glm.bse[0])
+    est = PriorEstimator(random_state=0, prior_strength=0, interval="percentile",
+                         n_resamples=400).fit(post[lab], s["y"][lab], s["w"][lab],
+                                              cells=s["cell"][lab])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = est.estimate(post[~lab], s["w"][~lab], cells=s["cell"][~lab])
+    half = (res.interval[1, 1] - res.interval[1, 0]) / 2
+    assert half / (1.96 * se) == pytest.approx(1.0, abs=0.2)
+
+
+def test_unlabelled_cells_only_and_bad_cells(star98):
+    s = star98
+    est = PriorEstimator(n_resamples=0).fit(_near_exact(s["y"]), s["y"], s["w"])
+    with pytest.raises(ValueError, match="`cells` must be 1-d with one cell label per row"):
+        est.estimate(_near_exact(s["y"]), s["w"], cells=s["cell"][:-1])
+    with pytest.raises(ValueError, match="`cells` contains missing labels"):
+        check_cells(np.array([1.0, np.nan]), 2)
+    # unit weights, every row its own cell: the test's variance is the plain one (Welch's
+    # separate variances instead of the pooled one, so the p-value moves only slightly)
+    rng = np.random.default_rng(3)
+    p1 = rng.uniform(0.05, 0.95, 400)
+    y = (rng.uniform(size=400) < p1).astype(int)
+    post = np.column_stack([1 - p1, p1])
+    est = PriorEstimator(n_resamples=0).fit(post[:200], y[:200])
+    a = est.estimate(post[200:])
+    b = est.estimate(post[200:], cells=np.arange(200))
+    assert b.shift_pvalue == pytest.approx(a.shift_pvalue, abs=0.02)
+    np.testing.assert_array_equal(a.prior, b.prior)
+
+
+def test_wrapper_takes_count_cells_and_leaves_plain_rows_alone(star98):
+    from sklearn.linear_model import LogisticRegression
+
+    s = star98
+    lab = s["labelled"][s["cell"]]
+    model = PriorShiftWrapper(LogisticRegression(C=1e6, max_iter=2000), random_state=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        model.fit(s["Xr"][lab], s["y"][lab], sample_weight=s["w"][lab])
+    # weighted rows with identical features and different labels: cells found on their own
+    codes = model.prior_estimator_._src_cells
+    assert codes is not None and np.unique(codes).shape[0] == int(s["labelled"].sum())
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        model.adapt(s["Xr"][~lab], sample_weight=s["w"][~lab], cells=s["cell"][~lab])
+        with_cells = model.target_prior_interval_.copy()
+        model.adapt(s["Xr"][~lab], sample_weight=s["w"][~lab])
+    assert not np.allclose(with_cells, model.target_prior_interval_)
+    # unweighted rows are never grouped (bit for bit as before)
+    plain = PriorShiftWrapper(LogisticRegression(), random_state=0)
+    plain.fit(s["X"], (s["k"] / s["n"] > 0.4).astype(int))
+    assert plain.prior_estimator_._src_cells is None
+    with pytest.raises(ValueError, match="`cells` must be 1-d"):
+        plain.fit(s["X"], (s["k"] / s["n"] > 0.4).astype(int), cells=np.arange(3))
+
+
+def test_groups_are_judged_by_cells_not_trials():
+    """A group of 2 cells with 10,000 trials is two observed rates, not 10,000 rows."""
+    rng = np.random.default_rng(0)
+    n_cells = 120
+    trials = np.concatenate([np.full(n_cells, 40.0), [5000.0, 5000.0]])
+    rate = rng.uniform(0.2, 0.6, trials.shape[0])
+    k = rng.binomial(trials.astype(int), rate).astype(float)
+    X = rate[:, None]
+    Xr, yr, w = expand_counts(X, k, trials, drop_empty=False)
+    cell = np.repeat(np.arange(trials.shape[0]), 2)
+    group = np.where(cell >= n_cells, "big", "many")
+    p = np.repeat(rate, 2)
+    by_rows = calibration_by_group(yr, p, group, sample_weight=w, n_resamples=0)
+    by_cells = calibration_by_group(yr, p, group, sample_weight=w, n_resamples=0, cells=cell)
+    judged_rows = {c.group: c.judged for c in by_rows.groups}
+    judged_cells = {c.group: c.judged for c in by_cells.groups}
+    assert judged_rows == {"big": True, "many": True}
+    assert judged_cells == {"big": False, "many": True}
+    big = next(c for c in by_cells.groups if c.group == "big")
+    assert big.cells == (2, 2, 2) and big.effective_rows == pytest.approx(10000.0)
+    assert any("counting cells" in note for note in by_cells.notes)
