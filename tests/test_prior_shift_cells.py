@@ -222,3 +222,52 @@ def test_groups_are_judged_by_cells_not_trials():
     big = next(c for c in by_cells.groups if c.group == "big")
     assert big.cells == (2, 2, 2) and big.effective_rows == pytest.approx(10000.0)
     assert any("counting cells" in note for note in by_cells.notes)
+
+
+def test_command_line_prevalence_passes_the_cells(star98, tmp_path, capsys, monkeypatch):
+    """`probwrap prevalence --reference-cell-column/--cell-column` gives the API's numbers."""
+    import json
+
+    import pandas as pd
+
+    import probwrap.cli._progress as progress
+    from probwrap.cli import main
+
+    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+    s = star98
+    lab = s["labelled"][s["cell"]]
+    risk = _near_exact(s["y"], 0.1)[:, 1]
+    pd.DataFrame({"risk": risk[lab], "above": s["y"][lab], "pupils": s["w"][lab],
+                  "district": [f"d{c}" for c in s["cell"][lab]]}).to_csv(tmp_path / "ref.csv",
+                                                                         index=False)
+    pd.DataFrame({"risk": risk[~lab], "pupils": s["w"][~lab],
+                  "district": [f"d{c}" for c in s["cell"][~lab]]}).to_csv(tmp_path / "new.csv",
+                                                                          index=False)
+    base = ["prevalence", "--unlabelled", tmp_path / "new.csv", "--score-column", "risk",
+            "--reference", tmp_path / "ref.csv", "--label-column", "above", "--weight-column",
+            "pupils", "--reference-weight-column", "pupils", "--resamples", 50,
+            "--format", "json"]
+
+    def run(*extra):
+        code = main([str(a) for a in [*base, *extra]])
+        out, err = capsys.readouterr()
+        assert code == 0, err
+        return json.loads(out)
+
+    cells = run("--cell-column", "district", "--reference-cell-column", "district")
+    rows = run()
+    from probwrap.cli._prevalence_numbers import kish_scaled, prevalence_from_reference
+
+    api = prevalence_from_reference(
+        risk[~lab], risk[lab], s["y"][lab], n_resamples=50, seed=0,
+        sample_weight=kish_scaled(s["w"][~lab]), reference_weight=kish_scaled(s["w"][lab]),
+        cells=s["cell"][~lab], reference_cells=s["cell"][lab])
+    np.testing.assert_allclose(cells["interval"], api["interval"], rtol=1e-9)
+    assert cells["shift_pvalue"] == pytest.approx(api["shift_pvalue"], rel=1e-9)
+    width = np.diff(cells["interval"])[0]
+    assert width < 0.6 * np.diff(rows["interval"])[0]
+    with pytest.raises(SystemExit):
+        main([str(a) for a in ["prevalence", "--unlabelled", tmp_path / "new.csv",
+                               "--score-column", "risk", "--source-prevalence", "0.4",
+                               "--cell-column", "district"]])
+    assert "go with --reference" in capsys.readouterr().err

@@ -76,6 +76,21 @@ def _prevalence(text: str) -> float:
     return value
 
 
+def _cells(frame: Any, column: str, path: str, flag: str) -> np.ndarray:
+    """The cell labels of ``column`` (``flag``), as written; a missing column or an empty
+    label is a :class:`DataError` naming the file and the flag."""
+    if column not in frame.columns:
+        raise DataError(f"{path}: no column {plain(column)!r} ({flag}); columns: "
+                        f"{', '.join(map(str, list(frame.columns)[:12]))}")
+    values = np.asarray(frame[column].to_numpy(), dtype=object)
+    empty = [i for i, v in enumerate(values.tolist())
+             if v is None or (isinstance(v, float) and v != v) or str(v).strip() == ""]
+    if empty:
+        raise DataError(f"{path}: column {plain(column)!r} ({flag}) has no cell in row "
+                        f"{empty[0] + 1} ({len(empty)} such rows); give every row its cell")
+    return np.asarray([str(v) for v in values.tolist()], dtype=object)
+
+
 def _batch_labels(frame: Any, args: argparse.Namespace, n: int) -> np.ndarray | None:
     if args.batch_size is not None:
         return (np.arange(n) // args.batch_size).astype(str)
@@ -271,7 +286,8 @@ def _run(args: argparse.Namespace) -> int:
         frame = read_table(args.unlabelled, exact=[args.score_column,
                                                    *([args.weight_column] if args.weight_column
                                                      else [])],
-                           text=[] if args.batch_column is None else [args.batch_column])
+                           text=([] if args.batch_column is None else [args.batch_column])
+                           + ([] if args.cell_column is None else [args.cell_column]))
         proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale)
         weights = read_weights(frame, args.weight_column, args.unlabelled, "prevalence",
                                relative=True)
@@ -296,7 +312,9 @@ def _run(args: argparse.Namespace) -> int:
             ref_column = args.reference_score_column or args.score_column
             ref_weight_column = args.reference_weight_column
             ref = read_table(args.reference, exact=[ref_column, *([ref_weight_column]
-                                                                  if ref_weight_column else [])])
+                                                                  if ref_weight_column else [])],
+                             text=[] if args.reference_cell_column is None
+                             else [args.reference_cell_column])
             ref_weights = read_weights(ref, ref_weight_column, args.reference, "prevalence",
                                        flag="--reference-weight-column", relative=True)
             if (ref_weight_column is None and args.weight_column is not None
@@ -317,6 +335,9 @@ def _run(args: argparse.Namespace) -> int:
                 ref, args.label_column, args.reference, positive=args.positive_label
             )
             ref_settings = {"reference_weight": kish_scaled(ref_weights)}
+            if args.reference_cell_column is not None:
+                ref_settings["reference_cells"] = _cells(ref, args.reference_cell_column,
+                                                         args.reference, "--reference-cell-column")
         check_row_count("prevalence", proba.shape[0], args.unlabelled, "unlabelled rows")
         if args.reference is not None:
             check_row_count("prevalence", ref_scores.shape[0], args.reference, "reference rows")
@@ -337,6 +358,8 @@ def _run(args: argparse.Namespace) -> int:
                         proba, ref_scores, ref_y, method=args.method,
                         recalibrate=not args.no_recalibration,
                         sample_weight=kish_scaled(weights),
+                        cells=None if args.cell_column is None else _cells(
+                            frame, args.cell_column, args.unlabelled, "--cell-column"),
                         **ref_settings, **settings,
                     )
                     out["labels"] = {"negative": labels[0], "positive": labels[1]}
@@ -427,6 +450,18 @@ def register(subparsers: Any) -> None:
         "take --reference-weight-column",
     )
     parser.add_argument(
+        "--cell-column", metavar="C", default=None,
+        help="with --reference: column naming the cell of every unlabelled row, for counts "
+        "(k of n: rows of one group share a cell); the shift test and the interval count "
+        "each cell as one unit. Not with batches",
+    )
+    parser.add_argument(
+        "--reference-cell-column", metavar="C", default=None,
+        help="with --reference: column naming the cell of every reference row (a group's "
+        "success and failure rows share one); each cell is one unit of the shift test and "
+        "the interval",
+    )
+    parser.add_argument(
         "--reference-weight-column", metavar="W", default=None,
         help="with --reference: column of row weights of the reference file (numbers >= 0, "
         "not all 0); --weight-column weights only the unlabelled file",
@@ -473,6 +508,14 @@ def register(subparsers: Any) -> None:
                 )
         elif args.label_column is None:
             parser.error("--reference needs --label-column")
+        if args.reference is None and (args.cell_column is not None
+                                       or args.reference_cell_column is not None):
+            parser.error("--cell-column and --reference-cell-column go with --reference (the "
+                         "cells are units of the two-sample shift test and its interval)")
+        if args.cell_column is not None and (args.batch_size is not None
+                                             or args.batch_column is not None):
+            parser.error("--cell-column does not go with --batch-size or --batch-column (a "
+                         "batch would split cells); estimate each batch's file on its own")
         alarm_settings(args, parser,
                        batched=args.batch_size is not None or args.batch_column is not None,
                        batches="--batch-size or --batch-column")

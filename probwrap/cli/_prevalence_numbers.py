@@ -111,11 +111,16 @@ def prevalence_from_reference(
     seed: int | None = 0,
     sample_weight: np.ndarray | None = None,
     reference_weight: np.ndarray | None = None,
+    cells: np.ndarray | None = None,
+    reference_cells: np.ndarray | None = None,
 ) -> dict[str, Any]:
     """Prevalence of unlabelled rows by :class:`probwrap.shift.PriorEstimator`.
 
     ``sample_weight`` weights the unlabelled rows (``estimate``), ``reference_weight`` the
-    reference rows (``fit``); the estimator counts both by Kish's effective size.
+    reference rows (``fit``); the estimator counts both by Kish's effective size. ``cells`` /
+    ``reference_cells``: the cell of every unlabelled / reference row (counts ``k`` of ``n``),
+    each cell one unit of the shift test and the interval (``estimate(cells=)``,
+    ``fit(cells=)``).
 
     Examples
     --------
@@ -133,8 +138,9 @@ def prevalence_from_reference(
 
     est = reference_estimator(ref_proba, ref_y, method=method, recalibrate=recalibrate,
                               n_resamples=n_resamples, confidence_level=confidence_level,
-                              seed=seed, reference_weight=reference_weight)
-    res = est.estimate(two_columns(proba), sample_weight=sample_weight)
+                              seed=seed, reference_weight=reference_weight,
+                              reference_cells=reference_cells)
+    res = est.estimate(two_columns(proba), sample_weight=sample_weight, cells=cells)
     # the estimator's two-sample score test (it carries the reference rows' error too)
     test = ShiftTestResult(res.shift_statistic, res.shift_pvalue, 1)
     out = result_dict(
@@ -157,6 +163,7 @@ def reference_estimator(
     confidence_level: float = 0.95,
     seed: int | None = 0,
     reference_weight: np.ndarray | None = None,
+    reference_cells: np.ndarray | None = None,
 ) -> Any:
     """The :class:`probwrap.shift.PriorEstimator` of ``prevalence --reference``, fitted on the
     reference rows (``reference_weight``: their weights, read by Kish's effective size)."""
@@ -168,7 +175,7 @@ def reference_estimator(
         n_resamples=n_resamples,
         confidence_level=confidence_level,
         random_state=seed,
-    ).fit(two_columns(ref_proba), ref_y, sample_weight=reference_weight)
+    ).fit(two_columns(ref_proba), ref_y, sample_weight=reference_weight, cells=reference_cells)
 
 
 def source_baseline_standard_error(
