@@ -433,6 +433,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self
         """
         self._check_params()
+        if cells is not None:
+            from .shift._cells import check_cells
+
+            if _is_dask(X) or _is_dask(y) or _is_dask(sample_weight):
+                raise ValueError(
+                    "`cells` is supported for rows in memory only: Dask or Spark rows are "
+                    "reduced to tallies, which keep no cells. Collect the rows, or leave "
+                    "`cells` out."
+                )
+            check_cells(cells, _num_rows(X))
         if _multiclass_dask(self.estimator, X, y, sample_weight):
             # Multiclass Dask rows: no tally (a posterior vector has no single score); the
             # calibration, source prior and confusion matrices are fitted by reductions over
@@ -446,10 +456,6 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 self._warn_weight_reading(kept[2])
             self._source_tally = None
             return self._finish_fit(est)
-        if cells is not None:
-            from .shift._cells import check_cells
-
-            check_cells(cells, _num_rows(X))
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
         self._warn_few_class_rows(ho.class_row_counts(ho.sample_weight))
         if sample_weight is not None and not ho.from_tally:
@@ -470,7 +476,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                  and getattr(self, "_fold_models", None) is not None)
         est.fit(ho.values, ho.y_index, ho.sample_weight, effective_rows=rows,
                 class_names=self.classes_, source_fold=ho.fold if refit else None,
-                cells=None if ho.from_tally else _count_cells(cells, ho, sample_weight))
+                cells=_count_cells(cells, ho, sample_weight))
         if ho.n_folds >= 2 and est.calibrator_ is not None:
             # A base model refit here: the likelihood-ratio test judged the fold models'
             # held-out probabilities, not the refit model's that predict_proba would return,
@@ -924,6 +930,11 @@ def _count_cells(cells: Any, ho: Any, sample_weight: Any) -> Any:
     """The labelled rows' cells for the prior estimate: ``cells`` as given; otherwise, with
     weights, the cells the folds found (``ho.cells``) where some cell holds rows of two labels
     (counts ``k`` of ``n``, a frequency table), else None (rows are their own units)."""
+    if ho.from_tally:
+        if cells is not None:
+            raise ValueError("`cells` cannot be honoured on labelled rows reduced to a tally "
+                             "(Dask or Spark rows); collect the rows, or leave `cells` out.")
+        return None
     if cells is not None:
         return cells
     found = getattr(ho, "cells", None)

@@ -271,3 +271,39 @@ def test_command_line_prevalence_passes_the_cells(star98, tmp_path, capsys, monk
                                "--score-column", "risk", "--source-prevalence", "0.4",
                                "--cell-column", "district"]])
     assert "go with --reference" in capsys.readouterr().err
+
+
+def test_multiclass_cells_reach_the_test_and_the_bootstrap():
+    """More than two classes: with every row its own cell (unit weights) the shift test is the
+    two-sample test with separate variances (shift_score_test, variance="separate", the
+    Krishnamoorthy & Yu form); with labelled cells the interval is the BCa bootstrap over
+    cells, and a cell of many rows drawn as one widens it against the same rows as units."""
+    from probwrap.shift import shift_score_test
+
+    rng = np.random.default_rng(0)
+
+    def draw(n, prior):
+        y = rng.choice(3, size=n, p=prior)
+        z = np.eye(3)[y] * 1.5 + rng.normal(size=(n, 3)) * 0.7
+        return np.exp(z) / np.exp(z).sum(axis=1, keepdims=True), y
+
+    ps, ys = draw(300, [0.5, 0.3, 0.2])
+    pt, _ = draw(300, [0.3, 0.4, 0.3])
+    est = PriorEstimator(n_resamples=0).fit(ps, ys, cells=np.arange(300))
+    res = est.estimate(pt, cells=np.arange(300))
+    ref = shift_score_test(est.calibrate(pt), est.source_prior_,
+                           source_proba=est.calibrate(ps), variance="separate")
+    assert res.shift_pvalue == pytest.approx(ref.pvalue, rel=1e-9)
+    # 30 cells of 10 rows each whose rows are copies of one another: ten times fewer units
+    copies = np.repeat(np.arange(30), 10)
+    ps_c, ys_c = ps[::10][copies], ys[::10][copies]
+    wide = {}
+    for use in (False, True):
+        est = PriorEstimator(n_resamples=200, interval="bca", random_state=0).fit(
+            ps_c, ys_c, cells=copies if use else None)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            r = est.estimate(pt)
+        assert np.all(r.interval[:, 0] <= r.prior) and np.all(r.prior <= r.interval[:, 1])
+        wide[use] = float(np.mean(r.interval[:, 1] - r.interval[:, 0]))
+    assert wide[True] > 1.3 * wide[False]  # measured 1.59

@@ -179,6 +179,9 @@ class PriorEstimator(_Resampling):
     n_classes_ : int
     n_source_effective_ : float
         Kish's effective number of labelled rows.
+    n_source_cells_ : int or None
+        With ``fit(cells=...)``: the labelled cells of positive weight (the units of the shift
+        test and the interval); None without cells.
     class_names_ : tuple or None
         Labels of the classes given to ``fit`` (``class_names``), used to name classes in
         warnings; None names them by column index.
@@ -294,6 +297,8 @@ class PriorEstimator(_Resampling):
         self._src_rows = None  # rows behind each entry of _src (None: one row each)
         self._src_fold = self._check_source_fold(source_fold, p.shape[0])
         self._src_cells = check_cells(cells, p.shape[0])
+        self.n_source_cells_ = (None if self._src_cells is None else
+                                int(np.unique(self._src_cells[w > 0]).shape[0]))
         self._boot = None
         self.n_classes_ = k
         self.n_source_effective_ = float(effective_rows) if effective_rows else _kish(w)
@@ -636,7 +641,11 @@ class PriorEstimator(_Resampling):
         # at most the labels' own (_cell_floor_rows), so the floor stays below the cells' error
         n_floor = n_eff if cell_t is None else max(n_eff, _cell_floor_rows(p, w, cell_t))
         if self.n_resamples > 0 and interval:
-            self._warn_few_labelled(n_src)
+            # with cells, the labelled cells count as units too (151 star98 districts are
+            # 23.5 rows by Kish's size of their pupils' counts)
+            cells_src = getattr(self, "n_source_cells_", None)
+            self._warn_few_labelled(n_src if cells_src is None or n_src is None
+                                    else max(n_src, float(cells_src)))
             source = self._source_rows()
             if not point.identified:
                 bounds = np.column_stack([np.zeros(k), np.ones(k)])
