@@ -307,3 +307,25 @@ def test_multiclass_cells_reach_the_test_and_the_bootstrap():
         assert np.all(r.interval[:, 0] <= r.prior) and np.all(r.prior <= r.interval[:, 1])
         wide[use] = float(np.mean(r.interval[:, 1] - r.interval[:, 0]))
     assert wide[True] > 1.3 * wide[False]  # measured 1.59
+
+
+def test_report_judges_groups_by_cells():
+    """The report's "By group" table: a group of 2 cells with 10,000 trials is not judged, and
+    its size reads "10000 (2 cells)"."""
+    from probwrap.report import build_report
+
+    rng = np.random.default_rng(0)
+    trials = np.concatenate([np.full(120, 40.0), [5000.0, 5000.0]])
+    rate = rng.uniform(0.2, 0.6, trials.shape[0])
+    k = rng.binomial(trials.astype(int), rate).astype(float)
+    _, yr, w = expand_counts(rate[:, None], k, trials, drop_empty=False)
+    cell = np.repeat(np.arange(trials.shape[0]), 2)
+    group = np.where(cell >= 120, "big", "many")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        content, page = build_report(y_true=yr, y_prob=np.repeat(rate, 2), sample_weight=w,
+                                     groups=group, cells=cell, n_resamples=20, random_state=0)
+    judged = {g.group: g.judged for g in content.group_checks.groups}
+    assert judged == {"big": False, "many": True}
+    row = page[page.find('data-group="big"'):]
+    assert row.startswith('data-group="big"><td>big</td><td>10000 (2 cells)</td><td><b>too small')

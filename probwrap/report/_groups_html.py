@@ -42,7 +42,10 @@ def group_section(c: Any) -> str:
     rows = []
     for g in [*checks.groups, checks.overall]:
         judged = "yes" if g.judged else "<b>too small to judge</b>"
-        cells = [f"<td>{_text(str(g.group))}</td>", f"<td>{g.effective_rows:.0f}</td>",
+        units = getattr(g, "cells", None)  # counts: the group's cells, the units judged
+        size = (f"{g.effective_rows:.0f}" if units is None
+                else f"{g.effective_rows:.0f} ({units[0]} cells)")
+        cells = [f"<td>{_text(str(g.group))}</td>", f"<td>{size}</td>",
                  f"<td>{judged}</td>", _cell(g.observed_rate), _cell(g.mean_forecast),
                  _cell(g.calibration_error), _cell(g.calibration_slope, 3),
                  _cell(g.calibration_intercept, 3), _cell(g.brier), _interval(g.brier_interval, g.judged),
