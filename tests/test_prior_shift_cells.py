@@ -323,3 +323,33 @@ def test_report_judges_groups_by_cells():
     assert judged == {"big": False, "many": True}
     row = page[page.find('data-group="big"'):]
     assert row.startswith('data-group="big"><td>big</td><td>10000 (2 cells)</td><td><b>too small')
+
+
+def test_shift_score_test_with_cells_is_welch_on_statsmodels_cluster_variances(star98):
+    """Two classes: the statistic is (mean_t - mean_s)^2 / (V_t + V_s) with each V statsmodels'
+    cluster-robust variance of that sample's weighted mean score (times G / (G - 1)), and the
+    estimator fitted without calibration gives the same p-value."""
+    from probwrap.shift import shift_score_test
+
+    s = star98
+    lab = s["labelled"][s["cell"]]
+    post = _near_exact(s["y"], 0.3)
+    src = np.bincount(s["y"][lab], weights=s["w"][lab]) / s["w"][lab].sum()
+    res = shift_score_test(post[~lab], src, sample_weight=s["w"][~lab],
+                           source_proba=post[lab], source_sample_weight=s["w"][lab],
+                           cells=s["cell"][~lab], source_cells=s["cell"][lab])
+    u_t = _score_rows(post[~lab], src)[:, 0]
+    u_s = _score_rows(post[lab], src)[:, 0]
+    v_t = _statsmodels_cluster_var(u_t, s["w"][~lab], s["cell"][~lab])
+    v_s = _statsmodels_cluster_var(u_s, s["w"][lab], s["cell"][lab])
+    diff = np.average(u_t, weights=s["w"][~lab]) - np.average(u_s, weights=s["w"][lab])
+    assert res.raw_statistic == pytest.approx(diff**2 / (v_t + v_s), rel=1e-9)
+    est = PriorEstimator(calibration=None, n_resamples=0).fit(
+        post[lab], s["y"][lab], s["w"][lab], cells=s["cell"][lab])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # (the ML share of these scores is at the edge)
+        got = est.estimate(post[~lab], s["w"][~lab], cells=s["cell"][~lab])
+    assert got.shift_pvalue == pytest.approx(res.pvalue, rel=1e-9)
+    with pytest.raises(ValueError, match="variance='pooled'"):
+        shift_score_test(post[~lab], src, source_proba=post[lab], cells=s["cell"][~lab],
+                         variance="pooled")

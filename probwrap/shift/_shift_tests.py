@@ -319,6 +319,8 @@ def shift_score_test(
     source_sample_weight: Any = None,
     source_y: Any = None,
     variance: str | None = None,
+    cells: Any = None,
+    source_cells: Any = None,
 ) -> ShiftTestResult:
     r"""Score test that unlabelled rows have the source class priors; no estimate needed.
 
@@ -388,7 +390,13 @@ def shift_score_test(
     variance : {"pooled", "separate"} or None, default=None
         With ``source_proba``: one score covariance pooled over both samples (Hotelling /
         Student) or one per sample (Behrens-Fisher / Welch). None: ``"pooled"`` without
-        ``source_y`` (what ``PriorShiftWrapper`` uses), ``"separate"`` with it.
+        ``source_y`` and cells (what ``PriorShiftWrapper`` uses), ``"separate"`` otherwise.
+    cells, source_cells : array-like of shape (n,) / (m,), default=None
+        The cell of every unlabelled / labelled row (outcomes aggregated as counts ``k`` of
+        ``n``, the rows of one sampled group sharing a cell): that sample's mean score then has
+        the cluster-robust variance on its cells with ``cells - 1`` degrees of freedom
+        (:mod:`probwrap.shift._cells`), and the variances are separate. ``source_cells`` goes
+        with the plain labelled mean (not with ``source_y``).
 
     Returns
     -------
@@ -405,10 +413,17 @@ def shift_score_test(
     >>> bool(res.pvalue < 1e-6)
     True
     """
+    from ._cells import cell_mean_cov, check_cells
+
     p, w = _check_target(proba, sample_weight, owner="shift_score_test")
     k = p.shape[1]
     src = check_prior(source_prior, k, name="source_prior", strictly_positive=True)
-    mean, cov, n = _mean_cov(_score_rows(p, src), w)
+    cell_t = check_cells(cells, p.shape[0], "cells")
+    if cell_t is None:
+        mean, cov, n = _mean_cov(_score_rows(p, src), w)
+    else:
+        mean, cov, n = cell_mean_cov(_score_rows(p, src), w, cell_t)
+    clustered = cell_t is not None
     source = None
     if source_proba is not None:
         ps, ws = _check_target(source_proba, source_sample_weight, name="source_proba",
@@ -419,11 +434,25 @@ def shift_score_test(
         if source_y is not None:
             check_same_length(("source_proba", ps), ("source_y", source_y))
             ys, _ = check_labels(source_y, name="source_y", classes=np.arange(k), min_classes=1)
-        source = _source_moments(_score_rows(ps, src), ws, ys, src)
+        cell_s = check_cells(source_cells, ps.shape[0], "source_cells")
+        if cell_s is not None and ys is not None:
+            raise ValueError("`source_cells` goes with the plain labelled mean: leave "
+                             "`source_y` as None.")
+        if cell_s is None:
+            source = _source_moments(_score_rows(ps, src), ws, ys, src)
+        else:
+            m_s, c_s, g_s = cell_mean_cov(_score_rows(ps, src), ws, cell_s)
+            source = (m_s, ((c_s / max(g_s - 1.0, 1.0), g_s),))
+            clustered = True
+    elif source_cells is not None:
+        raise ValueError("`source_cells` needs `source_proba` (the labelled rows).")
     if variance is None:
-        variance = "separate" if source_y is not None else "pooled"
+        variance = "separate" if source_y is not None or clustered else "pooled"
     if variance not in ("pooled", "separate"):
         raise ValueError(f"`variance` must be 'pooled', 'separate' or None; got {variance!r}.")
+    if variance == "pooled" and clustered:
+        raise ValueError("`variance='pooled'` pools per-row covariances; with `cells` or "
+                         "`source_cells` the variances are separate (leave `variance` None).")
     if variance == "pooled" and source_y is not None:
         raise ValueError(
             "`variance='pooled'` needs the plain labelled mean: leave `source_y` as None (the "
