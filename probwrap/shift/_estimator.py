@@ -554,8 +554,10 @@ class PriorEstimator(_Resampling):
             does for the labelled rows; either side may have cells without the other. With
             cells on either side the shift test compares the two means with separate variances
             (Welch) instead of one pooled covariance, and the floor of the interval
-            (:func:`_widen`) counts at least one row per unlabelled cell. With labelled cells
-            and more than two classes the interval is the BCa bootstrap over whole cells.
+            (:func:`_widen`) counts the rows whose binomial error equals the cells' clustered
+            error of the mean posterior (:func:`_cell_floor_rows`), not Kish's count. With
+            labelled cells and more than two classes the interval is the BCa bootstrap over
+            whole cells.
 
         Returns
         -------
