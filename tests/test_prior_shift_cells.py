@@ -134,6 +134,16 @@ def test_prevalence_interval_matches_statsmodels_cluster_error_on_star98(star98)
     crit = t_dist.ppf(0.975, g - 1)
     assert half[True] / (crit * se) == pytest.approx(1.0, abs=0.06)  # measured 1.01
     assert half[False] / (crit * se) > 2.0  # Kish's count (and its floor): measured 2.26
+    # the score interval itself, before the floor (which here nearly coincides with it)
+    from probwrap.shift import score_interval
+
+    est = PriorEstimator(prior_strength=0).fit(post[lab], s["y"][lab], s["w"][lab],
+                                               cells=s["cell"][lab])
+    (lo, hi), ok = score_interval(
+        est.calibrate(post[~lab]), est.calibrate(post[lab]), s["y"][lab], est.source_prior_,
+        sample_weight=s["w"][~lab], source_sample_weight=s["w"][lab], cells=s["cell"][~lab],
+        source_cells=s["cell"][lab])
+    assert ok and (hi - lo) / 2 / (crit * se) == pytest.approx(1.0, abs=0.03)  # measured 1.000
 
 
 def test_bootstrap_draws_whole_cells(star98):
