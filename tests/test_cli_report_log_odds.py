@@ -1,22 +1,32 @@
-"""``probwrap report --scale log-odds`` with log-odds beyond what probabilities can hold.
+"""``probwrap report --scale log-odds`` (and ``write_report(score_scale="log-odds")``) with
+log-odds beyond what probabilities can hold.
 
-The report reads probabilities: a log-odds beyond about 36.7 rounds to exactly 1, and the
-calibration slope and intercept floor probabilities at 1e-12 from the edges, i.e. read every
-log-odds beyond logit(1 - 1e-12) = 27.63 as 27.63. Data: margins of a weakly penalised logistic
-regression on scikit-learn's bundled breast-cancer set (24 of 269 held-out rows beyond 27.63).
+A probability is exactly 0 or 1 beyond log-odds of about +-36.7, and the calibration slope and
+intercept on probabilities floor them at 1e-12 from the edges, i.e. read every log-odds beyond
+logit(1 - 1e-12) = 27.63 as 27.63. Given log-odds, the report fits the slope and intercept (and
+computes the log loss) on the log-odds as given. Data: 5-fold cross-validated margins of a
+weakly penalised, standardised logistic regression (C=1000) on scikit-learn's bundled
+breast-cancer set: 395 of 569 rows beyond 27.63, where the clipped slope was 0.177 and
+statsmodels' GLM(binomial) on the given log-odds gives 0.127.
 """
 
 from __future__ import annotations
 
 import math
+import warnings
 
 import numpy as np
 import pandas as pd
 import pytest
 from sklearn.datasets import load_breast_cancer
 from sklearn.linear_model import LogisticRegression
+from sklearn.model_selection import cross_val_predict
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
 
 from probwrap.cli import main
+
+BOUND = math.log1p(-1e-12) - math.log(1e-12)
 
 
 @pytest.fixture(autouse=True)
@@ -33,34 +43,115 @@ def margins():
     return model.decision_function(X[300:]), y[300:]
 
 
-def test_log_odds_floor_is_said_in_log_odds(margins, tmp_path, capsys):
-    d, y = margins
-    bound = math.log1p(-1e-12) - math.log(1e-12)
-    beyond = int(np.sum(np.abs(d) > bound))
-    assert beyond > 0
+@pytest.fixture(scope="module")
+def wide_margins():
+    X, y = load_breast_cancer(return_X_y=True)
+    model = make_pipeline(StandardScaler(), LogisticRegression(C=1000, max_iter=10000))
+    d = cross_val_predict(model, X, y, cv=5, method="decision_function")
+    return d, y
+
+
+@pytest.fixture(scope="module")
+def glm(wide_margins):
+    import statsmodels.api as sm
+
+    d, y = wide_margins
+    slope = sm.GLM(y, sm.add_constant(d), family=sm.families.Binomial()).fit()
+    offset = sm.GLM(y, np.ones((d.shape[0], 1)), family=sm.families.Binomial(), offset=d).fit()
+    return slope.params, offset.params[0]
+
+
+def _metrics(content):
+    return {m.key: m for m in content.metrics}
+
+
+def test_margins_are_beyond_what_probabilities_hold(wide_margins, glm):
+    d, _ = wide_margins
+    assert int(np.sum(np.abs(d) > BOUND)) == 395
+    assert glm[0][1] == pytest.approx(0.127, abs=5e-4)
+
+
+def test_report_slope_and_intercept_equal_glm_on_the_given_log_odds(wide_margins, glm):
+    from probwrap.report import build_report
+
+    d, y = wide_margins
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        content, page = build_report(y_true=y, y_prob=d, score_scale="log-odds",
+                                     n_resamples=20, random_state=0)
+    rows = _metrics(content)
+    # statsmodels GLM(binomial): logit P(y) = a + b d (slope), and d as an offset (intercept)
+    assert rows["slope"].value == pytest.approx(glm[0][1], rel=1e-6)
+    assert rows["intercept"].value == pytest.approx(glm[1], rel=1e-6)
+    assert rows["slope"].low < rows["slope"].value < rows["slope"].high
+    # the old page read the log-odds through probabilities clipped at 1e-12: 0.177
+    assert abs(rows["slope"].value - 0.177) > 0.04
+    assert not any("lie closer than" in str(w.message) for w in caught)
+    # log loss exact from the log-odds: scipy's log_expit, no clip
+    from scipy.special import log_expit
+
+    expected = -np.mean(np.where(y == 1, log_expit(d), log_expit(-d)))
+    assert rows["log_loss"].value == pytest.approx(expected, rel=1e-12)
+    assert "0.127" in page
+
+
+def test_fast_path_reads_the_same_log_odds(wide_margins, glm):
+    # the one-pass bootstrap (>= 50,000 rows) takes the log-odds too; called directly here
+    from scipy.special import expit, log_expit
+
+    from probwrap.report._common import NoteLog
+    from probwrap.report._fast_metrics import fast_metric_rows
+
+    d, y = wide_margins
+    labels = {k: k for k in ("brier", "log_loss", "ece", "slope", "intercept")}
+    rows = {r.key: r for r in fast_metric_rows(y, expit(d), None, 10, 20, 0.95, 0, NoteLog(),
+                                               labels, log_odds=d)}
+    assert rows["slope"].value == pytest.approx(glm[0][1], rel=1e-6)
+    assert rows["intercept"].value == pytest.approx(glm[1], rel=1e-6)
+    expected = -np.mean(np.where(y == 1, log_expit(d), log_expit(-d)))
+    assert rows["log_loss"].value == pytest.approx(expected, rel=1e-12)
+
+
+def test_cli_page_shows_the_glm_slope_and_no_floor_warning(wide_margins, glm, tmp_path,
+                                                           capsys):
+    d, y = wide_margins
     pd.DataFrame({"margin": d, "y": y}).to_csv(tmp_path / "scores.csv", index=False)
     code = main(["report", "--scores", str(tmp_path / "scores.csv"), "--score-column",
                  "margin", "--label-column", "y", "--scale", "log-odds", "--resamples", "20",
                  "--out", str(tmp_path / "r.html")])
     err = capsys.readouterr().err
     assert code == 0, err
-    assert f"{beyond} row(s) have log-odds beyond +-27.6" in err
-    assert "exactly 0 or 1" not in err  # the user gave finite log-odds, not 0 and 1
+    assert "27.6" not in err and "exactly 0 or 1" not in err and "below 2.22e-16" not in err
+    page = (tmp_path / "r.html").read_text()
+    assert f"{glm[0][1]:.3f}" in page and "0.177" not in page
 
 
-def test_slope_reads_log_odds_floored_at_the_bound(margins):
-    # what the warning says, checked against statsmodels' GLM on the log-odds clipped at
-    # +-logit(1 - 1e-12); here the rows beyond the bound are all on their correct side, so the
-    # given log-odds give the same slope to 1e-9 (a confident error beyond the bound would not)
+def test_score_scale_is_checked():
+    from probwrap.report import build_report
+
+    with pytest.raises(ValueError, match="score_scale"):
+        build_report(y_true=[0, 1], y_prob=[0.2, 0.8], score_scale="logit")
+    with pytest.raises(ValueError, match="non-finite"):
+        build_report(y_true=[0, 1, 0], y_prob=[0.0, np.inf, 1.0], score_scale="log-odds")
+    with pytest.raises(ValueError, match="1-d"):
+        build_report(y_true=[0, 1], y_prob=[[0.0, 1.0], [1.0, 0.0]], score_scale="log-odds")
+
+
+def test_slope_on_probabilities_reads_log_odds_floored_at_the_bound(margins):
+    # the probability path is unchanged: checked against statsmodels' GLM on the log-odds
+    # clipped at +-logit(1 - 1e-12); here the rows beyond the bound are all on their correct
+    # side, so the given log-odds give the same slope to 1e-9 (a confident error would not)
     import statsmodels.api as sm
 
     from probwrap.calibration import log_odds_to_proba
-    from probwrap.metrics._slope import slope_intercept_fit
+    from probwrap.metrics._slope import slope_intercept_fit, slope_intercept_fit_log_odds
 
     d, y = margins
-    bound = math.log1p(-1e-12) - math.log(1e-12)
     fit = slope_intercept_fit(y, log_odds_to_proba(d))
-    clipped = sm.GLM(y, sm.add_constant(np.clip(d, -bound, bound)),
+    clipped = sm.GLM(y, sm.add_constant(np.clip(d, -BOUND, BOUND)),
                      family=sm.families.Binomial()).fit()
     assert fit.slope == pytest.approx(clipped.params[1], rel=1e-5)
     assert fit.slope_fit_intercept == pytest.approx(clipped.params[0], rel=1e-5, abs=1e-6)
+    given = slope_intercept_fit_log_odds(y, d)
+    exact = sm.GLM(y, sm.add_constant(d), family=sm.families.Binomial()).fit()
+    assert given.slope == pytest.approx(exact.params[1], rel=1e-6)

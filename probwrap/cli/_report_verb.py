@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 import json
 import math
-import re
 import warnings
 from typing import Any
 
@@ -377,41 +376,10 @@ def _build_and_write(args: argparse.Namespace, stages: Stages, **inputs):
         except (ValueError, FloatingPointError, OverflowError) as exc:
             raise DataError(f"{args.scores}: the report cannot be made ({clean(str(exc))})"
                             ) from None
-    if getattr(args, "scale", "proba") == "log-odds":
-        _in_log_odds_words(caught)
     report_warnings("report", caught)
     stages.start("writing")
     write_text(args.out, page)
     return content
-
-
-#: the library's note on probabilities floored for the log-odds of the slope and intercept
-_FLOORED = re.compile(r"(\d+) row\(s\) of `y_prob` lie closer than `clip` to 0 or 1; they were "
-                      r"moved to (\S+) \(see the `clip` note in the docstring\)\.")
-
-
-def _in_log_odds_words(caught: list) -> None:
-    """Say the slope's floor in log-odds to a user who gave log-odds (``--scale log-odds``).
-
-    The report reads probabilities, and a log-odds beyond about +-36.7 rounds to a probability
-    of exactly 0 or 1 in floating point; the calibration slope and intercept then read every
-    log-odds beyond ``logit(1 - clip)`` (27.6 for the default clip) as that bound, so on such
-    files they are approximate. The library's note speaks of scores of exactly 0 or 1, which
-    this user never wrote.
-    """
-    for w in caught:
-        text = str(w.message)
-        found = _FLOORED.search(text)
-        if not found:
-            continue
-        clip = float(found.group(2))
-        bound = math.log1p(-clip) - math.log(clip)
-        w.message = UserWarning(text[:found.start()] + (
-            f"{found.group(1)} row(s) have log-odds beyond +-{bound:.1f}. The report reads the "
-            "scores as probabilities, in which these are not told apart from 0 or 1, so the "
-            f"calibration slope and intercept read them as +-{bound:.1f} and are approximate "
-            "here (fit them on the log-odds themselves for exact values).")
-            + text[found.end():])
 
 
 def _collect_parameters() -> set[str]:
@@ -565,14 +533,13 @@ def _handler(args: argparse.Namespace) -> int:
                     "series of batches and cannot judge a drift from one"))
         check_ranking("report", p[closed], y[closed], labels, args.scores,
                       sample_weight=None if given is None else given[closed])
-        if args.scale == "log-odds":
-            from probwrap.calibration import log_odds_to_proba
-
-            p = log_odds_to_proba(p)
-            q = None if q is None else log_odds_to_proba(q)
+        if args.scale == "log-odds":  # the report reads the log-odds as given where it can
+            extra_scale = {"score_scale": "log-odds"}
+        else:
+            extra_scale = {}
         if [str(v) for v in labels] != ["0", "1"]:  # say on the page which class is positive
             args.title = f"{args.title} (positive class: {labels[1]})"
-        extra: dict = {"guarantee": guarantee}
+        extra: dict = {"guarantee": guarantee, **extra_scale}
         if args.group_column is not None:
             extra["groups"] = _group_labels(frame, args.group_column, args.scores)
         if args.cell_column is not None:

@@ -29,8 +29,9 @@ _RULES: list[tuple[re.Pattern[str], str]] = [(re.compile(a), b) for a, b in [
      r"were moved to \1 from the edge. Scores of exactly 0 or 1 claim a certainty the rows "
      r"rarely bear out: `probwrap calibrate fit` maps them inside (0, 1)."),
     (r"\s*\(see the `clip` note in the docstring\)", ""),
-    (r"The classes in `y_true` do not overlap in logit\(`y_prob`\)",
+    (r"The classes in `y_true` do not overlap in (?:logit\(`y_prob`\)|`log_odds`)",
      "The two labels do not overlap in the log-odds of the scores"),
+    (r"Every forecast in `log_odds` is the same", "Every score is the same"),
     # prior shift: settings the command line does not expose
     (r"The reported prior is shrunk toward the source prior \(prior_strength\);",
      "The reported prevalence is shrunk toward the source prevalence (by the estimator's "

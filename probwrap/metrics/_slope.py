@@ -15,7 +15,8 @@ from .._validation import plain, power_of_two_unit
 from ..calibration._logodds import DEFAULT_CLIP, proba_to_log_odds
 from ._inputs import prepare_binary, warn_floored
 
-__all__ = ["CalibrationSlopeIntercept", "calibration_slope_intercept", "slope_intercept_fit"]
+__all__ = ["CalibrationSlopeIntercept", "calibration_slope_intercept", "slope_intercept_fit",
+           "slope_intercept_fit_log_odds"]
 
 
 @dataclass(frozen=True)
@@ -226,16 +227,47 @@ def slope_intercept_fit(
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
     if not (isinstance(clip, (int, float)) and 0.0 < clip < 0.5):
         raise ValueError(f"`clip` must be a number in (0, 0.5); got {plain(clip)!r}.")
-    pos = (y == 1.0) & (w > 0)
-    neg = (y == 0.0) & (w > 0)
-    if not pos.any() or not neg.any():
+    _check_both_classes(y, w)
+    warn_floored(int(np.count_nonzero(((p < clip) | (p > 1.0 - clip)) & (w > 0))), clip,
+                 "of `y_prob` lie closer than `clip` to 0 or 1")
+    return _fit_on_log_odds(proba_to_log_odds(p, clip=clip), y, w, "`y_prob`", "logit(`y_prob`)",
+                            p)
+
+
+def slope_intercept_fit_log_odds(
+    y_true: Any, log_odds: Any, *, sample_weight: Any = None, labels: Any = None,
+) -> CalibrationSlopeIntercept:
+    """:func:`slope_intercept_fit` on forecasts given as log-odds (e.g. ``decision_function``
+    values): fitted on ``log_odds`` as they are, with no clip, so it equals a logistic
+    regression of ``y_true`` on them (statsmodels' ``GLM(binomial)``) at any size of log-odds,
+    where the probabilities ``expit(log_odds)`` are exactly 0 or 1 beyond about +-36.7 and
+    ``logit`` of them is clipped at +-27.6."""
+    try:
+        x = np.asarray(log_odds, dtype=float)
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"`log_odds` must be numbers (one log-odds per row) ({exc}).") from None
+    if x.ndim != 1 or not np.all(np.isfinite(x)):
+        raise ValueError("`log_odds` must be 1-d finite numbers (one log-odds per row); got "
+                         f"shape {x.shape}" + ("" if x.ndim != 1 else " with non-finite values")
+                         + ".")
+    y, _, w = prepare_binary(y_true, expit(x), sample_weight, labels)
+    _check_both_classes(y, w)
+    return _fit_on_log_odds(x, y, w, "`log_odds`", "`log_odds`", x)
+
+
+def _check_both_classes(y: np.ndarray, w: np.ndarray) -> None:
+    if not ((y == 1.0) & (w > 0)).any() or not ((y == 0.0) & (w > 0)).any():
         raise ValueError(
             "`y_true` must contain both classes (with positive weight) for a calibration slope "
             "and intercept."
         )
-    warn_floored(int(np.count_nonzero(((p < clip) | (p > 1.0 - clip)) & (w > 0))), clip,
-                 "of `y_prob` lie closer than `clip` to 0 or 1")
-    x = proba_to_log_odds(p, clip=clip)
+
+
+def _fit_on_log_odds(x: np.ndarray, y: np.ndarray, w: np.ndarray, name: str, scale: str,
+                     shown: np.ndarray) -> CalibrationSlopeIntercept:
+    """Both fits on the forecasts' log-odds ``x``; ``name``/``scale`` name the input in notes."""
+    pos = (y == 1.0) & (w > 0)
+    neg = (y == 0.0) & (w > 0)
     keep = w > 0
     xk, yk, wk = x[keep], y[keep], w[keep]
     # frequency weights enter the likelihood as a common factor: divided by a power of two
@@ -247,13 +279,13 @@ def slope_intercept_fit(
     reason = None
     if xk.min() == xk.max():
         reason = (
-            f"Every forecast in `y_prob` is the same ({plain(float(p[keep][0]))!r}); a "
+            f"Every forecast in {name} is the same ({plain(float(shown[keep][0]))!r}); a "
             "calibration slope needs forecasts that vary, so the slope is NaN (the "
             "calibration-in-the-large is computed)."
         )
     elif x[pos].min() >= x[neg].max() or x[neg].min() >= x[pos].max():
         reason = (
-            "The classes in `y_true` do not overlap in logit(`y_prob`) (every positive is at or "
+            f"The classes in `y_true` do not overlap in {scale} (every positive is at or "
             "above every negative, or the reverse); the calibration slope is unbounded, so it is "
             "NaN (the calibration-in-the-large is computed)."
         )

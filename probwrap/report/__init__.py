@@ -75,6 +75,7 @@ def write_report(
     alarm_reference: float | None = None,
     alarm_decision_interval: float | None = None,
     cells: Any = None,
+    score_scale: str = "proba",
 ) -> ReportContent | MulticlassReportContent:
     """Write a self-contained HTML report and return the numbers it shows.
 
@@ -214,6 +215,13 @@ def write_report(
         False: always rows. The page says which unit was resampled and, for binary outcomes
         with whole-number weights, the cells' Pearson dispersion (a note when it is well above
         1). In ``content.resampling``.
+    score_scale : {"proba", "log-odds"}, default="proba"
+        What ``y_prob`` and ``unlabelled_prob`` hold (binary reports with ``y_true``/``y_prob``):
+        probabilities, or log-odds (any finite number, e.g. ``decision_function`` values). The
+        report turns log-odds into probabilities for everything that reads probabilities, and
+        fits the calibration slope and intercept and computes the log loss on the log-odds as
+        given: a probability is exactly 0 or 1 beyond log-odds of about +-36.7, and the
+        slope and intercept on probabilities read every log-odds beyond +-27.6 as +-27.6.
 
     Returns
     -------
@@ -255,7 +263,7 @@ def write_report(
         row_costs=row_costs, class_names=class_names, progress=progress, groups=groups,
         guarantee=guarantee, horizon_labels=horizon_labels, time=time, event=event,
         horizon=horizon, alarm_reference=alarm_reference,
-        alarm_decision_interval=alarm_decision_interval, cells=cells,
+        alarm_decision_interval=alarm_decision_interval, cells=cells, score_scale=score_scale,
     )
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)

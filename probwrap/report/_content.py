@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+from scipy.special import expit
 
 from .._validation import plain
 from ..decision import (
@@ -28,7 +29,7 @@ from ..metrics import (
     expected_calibration_error,
     log_loss,
 )
-from ..metrics._slope import slope_intercept_fit
+from ..metrics._slope import slope_intercept_fit, slope_intercept_fit_log_odds
 from ..plot._common import binary_labels, positive_proba
 from ..shift import PriorEstimator, adjust_to_prior, prior_by_batch, shift_cutoff
 from ._binary_labels import binary_class_names, binary_truth
@@ -148,19 +149,27 @@ def _find(chain: list[Any], cls_name: str) -> Any:
 
 
 def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes,
-                 groups=None) -> list[MetricRow]:
+                 groups=None, log_odds=None) -> list[MetricRow]:
+    """The five calibration rows; ``log_odds``: the forecasts as given on the log-odds scale
+    (``score_scale="log-odds"``), which the slope and intercept are fitted on instead of
+    ``logit(p)`` (clipped at +-27.6, and ``p`` itself is 0 or 1 beyond about +-36.7)."""
+    fit_on = slope_intercept_fit if log_odds is None else slope_intercept_fit_log_odds
+    on_log_odds = ("slope", "intercept") if log_odds is None else ("slope", "intercept",
+                                                                   "log_loss")
+
     def slope(yt, yp, sample_weight=None):
-        fit = slope_intercept_fit(yt, yp, sample_weight=sample_weight)
+        fit = fit_on(yt, yp, sample_weight=sample_weight)
         if fit.notes:  # forecasts that do not vary or separate the classes: no slope
             raise ValueError(fit.notes[0])
         return fit.slope
 
     def intercept(yt, yp, sample_weight=None):
-        return slope_intercept_fit(yt, yp, sample_weight=sample_weight).intercept
+        return fit_on(yt, yp, sample_weight=sample_weight).intercept
 
     specs = [
         ("brier", "Brier score", brier_score, {}, "0 (lower is better)"),
-        ("log_loss", "log loss", log_loss, {}, "0 (lower is better)"),
+        ("log_loss", "log loss", log_loss if log_odds is None else log_loss_of_log_odds, {},
+         "0 (lower is better)"),
         ("ece", f"expected calibration error ({n_bins} equal-width bins, bias-corrected)",
          expected_calibration_error, {"n_bins": n_bins}, "0"),
         ("slope", "calibration slope", slope, {}, "1"),
@@ -169,10 +178,40 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes,
     seed = int(rng.randint(2**31 - 1))
     if p.shape[0] >= FAST_BOOTSTRAP_ROWS:
         return fast_metric_rows(y, p, w, n_bins, n_resamples, level, seed, notes,
-                                {key: label for key, label, *_ in specs}, groups=groups)
-    return [metric_row(notes, key, label, fn, y, p, w, ideal, n_resamples, level, seed,
-                       groups=groups, **kw)
+                                {key: label for key, label, *_ in specs}, groups=groups,
+                                log_odds=log_odds)
+    return [metric_row(notes, key, label, fn, y,
+                       log_odds if key in on_log_odds and log_odds is not None else p,
+                       w, ideal, n_resamples, level, seed, groups=groups, **kw)
             for key, label, fn, kw, ideal in specs]
+
+
+def log_loss_of_log_odds(y_true: Any, log_odds: Any, sample_weight: Any = None) -> float:
+    """Log loss of 0/1 labels under forecasts given as log-odds ``x``: the weighted mean of
+    ``log(1 + exp(-x))`` over positives and ``log(1 + exp(x))`` over negatives, exact at any
+    size of ``x`` (no clip: a probability ``expit(x)`` is exactly 0 or 1 beyond about
+    +-36.7, where the log loss of probabilities must clip)."""
+    y = np.asarray(y_true, dtype=float)
+    x = np.asarray(log_odds, dtype=float)
+    return float(np.average(np.logaddexp(0.0, np.where(y == 1.0, -x, x)),
+                            weights=sample_weight))
+
+
+def _given_log_odds(scores: Any, name: str) -> np.ndarray:
+    """``score_scale="log-odds"``: the binary scores as 1-d finite floats (a copy)."""
+    try:
+        x = np.array(scores, dtype=float)
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"`{name}` must hold numbers (log-odds, since "
+                         f"score_scale='log-odds') ({exc}).") from None
+    if x.ndim != 1:
+        raise ValueError(f"`{name}` must be 1-d positive-class log-odds with "
+                         f"score_scale='log-odds' (a binary report); got shape {x.shape}. "
+                         "Multiclass reports take probabilities.")
+    if not np.all(np.isfinite(x)):
+        raise ValueError(f"`{name}` holds {int(np.count_nonzero(~np.isfinite(x)))} non-finite "
+                         "value(s); log-odds (score_scale='log-odds') must be finite numbers.")
+    return x
 
 
 def _maximum_likelihood(content: Any, res: Any, strength: Any) -> None:
@@ -220,6 +259,7 @@ def collect_content(
     alarm_reference: float | None = None,
     alarm_decision_interval: float | None = None,
     cells: Any = None,
+    score_scale: str = "proba",
 ) -> Any:
     """Compute the report's numbers; see :func:`probwrap.report.write_report`.
 
@@ -239,6 +279,19 @@ def collect_content(
             "intervals, use the functions of probwrap.metrics (e.g. calibration_by_group with "
             "n_resamples=0)."
         )
+    if score_scale not in ("proba", "log-odds"):
+        raise ValueError("`score_scale` must be 'proba' (probabilities) or 'log-odds'; got "
+                         f"{plain(score_scale)!r}.")
+    log_odds = None
+    if score_scale == "log-odds":
+        if y_prob is None or model is not None or prior_shift is not None:
+            raise ValueError("score_scale='log-odds' says that `y_prob` (and `unlabelled_prob`) "
+                             "hold log-odds; give `y_true` and `y_prob` (with `model` or "
+                             "`prior_shift` the report reads their probabilities).")
+        log_odds = _given_log_odds(y_prob, "y_prob")
+        y_prob = expit(log_odds)
+        if unlabelled_prob is not None:
+            unlabelled_prob = expit(_given_log_odds(unlabelled_prob, "unlabelled_prob"))
     rng = check_random_state(random_state)
     chain = _inner_chain(model)
     policy = _find(chain, "CostPolicyWrapper")
@@ -319,7 +372,7 @@ def collect_content(
         y_prob=p,
         sample_weight=w,
         metrics=_metric_rows(y01, p, w, n_bins, n_resamples, confidence_level, rng, notes,
-                             groups=unit.groups),
+                             groups=unit.groups, log_odds=log_odds),
         n_bins=n_bins,
         confidence_level=confidence_level,
         class_names=class_pair,

@@ -30,7 +30,7 @@ from ..metrics import (
     expected_calibration_error,
     log_loss,
 )
-from ..metrics._slope import slope_intercept_fit
+from ..metrics._slope import slope_intercept_fit, slope_intercept_fit_log_odds
 from ._common import MetricRow, NoteLog
 
 __all__ = ["FAST_BOOTSTRAP_ROWS", "fast_metric_rows"]
@@ -43,11 +43,13 @@ _SLOPE_CLIP = 1e-12
 
 def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins: int,
                      n_resamples: int, level: float, seed: int, notes: NoteLog,
-                     labels: dict[str, str], groups: np.ndarray | None = None
-                     ) -> list[MetricRow]:
+                     labels: dict[str, str], groups: np.ndarray | None = None,
+                     log_odds: np.ndarray | None = None) -> list[MetricRow]:
     """The five binary metric rows (see the module docstring); ``labels`` key -> label;
     ``groups``: the cell (``0 .. n_cells - 1``) of every row, resampled whole as
-    ``bootstrap_interval(groups=)`` does (None: rows)."""
+    ``bootstrap_interval(groups=)`` does (None: rows); ``log_odds``: the forecasts as given
+    on the log-odds scale, which the slope, intercept and log loss read (None: ``logit(p)``
+    and ``log p``, clipped)."""
     from ..metrics._scores import LOG_LOSS_CLIP
 
     n = p.shape[0]
@@ -56,13 +58,20 @@ def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins:
     point = {
         "brier": notes.compute("metric:brier", labels["brier"], brier_score, y, p,
                                sample_weight=w),
-        "log_loss": notes.compute("metric:log_loss", labels["log_loss"], log_loss, y, p,
-                                  sample_weight=w),
+        "log_loss": (notes.compute("metric:log_loss", labels["log_loss"], log_loss, y, p,
+                                   sample_weight=w) if log_odds is None else
+                     float(np.average(np.logaddexp(0.0, np.where(y == 1, -log_odds, log_odds)),
+                                      weights=w))),
         "ece": notes.compute("metric:ece", labels["ece"], expected_calibration_error, y, p,
                              n_bins=n_bins, sample_weight=w, labels=[0.0, 1.0]),
     }
-    fit = notes.compute("metric:slope", labels["slope"], slope_intercept_fit, y, p,
-                        sample_weight=w, expected=(ValueError, np.linalg.LinAlgError))
+    if log_odds is None:
+        fit = notes.compute("metric:slope", labels["slope"], slope_intercept_fit, y, p,
+                            sample_weight=w, expected=(ValueError, np.linalg.LinAlgError))
+    else:
+        fit = notes.compute("metric:slope", labels["slope"], slope_intercept_fit_log_odds, y,
+                            log_odds, sample_weight=w,
+                            expected=(ValueError, np.linalg.LinAlgError))
     no_slope = fit is not None and bool(fit.notes)
     if no_slope:  # forecasts that do not vary or separate the classes: intercept only
         notes.add("metric:slope", labels["slope"], "not computed", fit.notes[0])
@@ -70,9 +79,12 @@ def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins:
                       stacklevel=3)
     # per-row values
     p_obs = np.where(yf == 1.0, p, 1.0 - p)
-    cols = [bw * (p - yf) ** 2, bw * -np.log(np.maximum(p_obs, LOG_LOSS_CLIP)), bw]
+    per_row_loss = (-np.log(np.maximum(p_obs, LOG_LOSS_CLIP)) if log_odds is None else
+                    np.logaddexp(0.0, np.where(yf == 1.0, -log_odds, log_odds)))
+    cols = [bw * (p - yf) ** 2, bw * per_row_loss, bw]
     if fit is not None:
-        x = proba_to_log_odds(p, clip=_SLOPE_CLIP)
+        x = (proba_to_log_odds(p, clip=_SLOPE_CLIP) if log_odds is None
+             else np.asarray(log_odds, dtype=float))
         mu = (np.full_like(p, 0.5) if no_slope
               else expit(fit.slope_fit_intercept + fit.slope * x))
         r, v = yf - mu, mu * (1.0 - mu)
