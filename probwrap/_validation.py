@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 import numbers
+import re
 from typing import Any
 
 import numpy as np
@@ -203,6 +204,36 @@ def cutoff_text(value: float, spec: str = ".6g") -> str:
         # (a number nearer 0 than 17 decimals show: in powers of ten)
         text = f"{v:.{decimals}f}" if decimals <= 17 else f"{v:.2g}"
     return text
+
+
+def cutoff_texts(values: Any, spec: str = ".6g") -> list[str]:
+    """Texts of cutoffs shown side by side (a same-cost range and the cutoff in it):
+    :func:`cutoff_text` of each with ``spec`` (``".<k>g"``), given as many more significant
+    digits (up to 17, which tell every two doubles apart) as make different values read
+    differently and equal ones alike.
+
+    A range from 0.99999999808 to 0.99999999812 printed with two digits of the distance to 1
+    read ``[0.9999999981, 0.9999999981)``, a range with no cutoff in it; at ``.6g``, 0.99999932
+    and 0.99999948 both read ``0.999999``.
+
+    Examples
+    --------
+    >>> from probwrap._validation import cutoff_texts
+    >>> cutoff_texts([0.99999999808, 0.9999999981, 0.99999999812])
+    ['0.99999999808', '0.9999999981', '0.99999999812']
+    >>> cutoff_texts([0.25, 0.25, 0.5])
+    ['0.25', '0.25', '0.5']
+    """
+    vals = [float(v) for v in values]
+    found = re.fullmatch(r"\.(\d+)g", spec)
+    if found is None:
+        raise ValueError(f"`spec` must be '.<k>g'; got {spec!r}.")
+    for k in range(int(found.group(1)), 18):
+        texts = [cutoff_text(v, f".{k}g") for v in vals]
+        if all((texts[i] == texts[j]) == (vals[i] == vals[j])
+               for i in range(len(vals)) for j in range(i)):
+            return texts
+    return texts
 
 
 def _type_kind(t: type) -> str:

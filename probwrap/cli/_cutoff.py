@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import cutoff_text, power_of_two_unit
+from .._validation import cutoff_text, cutoff_texts, power_of_two_unit
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
@@ -276,21 +276,31 @@ def _capacity_ties(
             "flagged_share_with_them": flagged + share}
 
 
+def _same_cost_text(out: dict[str, Any], lo_t: str, hi_t: str) -> str:
+    """The same-cost range ``[low, high)`` as text, or the one cutoff when it is a point."""
+    low, high = out["cutoff_range"]
+    if low == high:  # e.g. probabilities of exactly 1: "act on none" is the cutoff 1 alone
+        return f"{lo_t} only"
+    # a range that reaches 1 for probabilities includes 1 (no row scores above it)
+    return f"[{lo_t}, {hi_t}" + ("]" if out["score_scale"] == "proba" and high >= 1.0 else ")")
+
+
 def _text(out: dict[str, Any], path: str) -> str:
     level = round(100 * out["confidence_level"])
+    # the cutoff and the ends of its same-cost range with enough digits to be told apart
+    lo_t, cut_t, hi_t = cutoff_texts([out["cutoff_range"][0], out["cutoff"],
+                                      out["cutoff_range"][1]])
+    ci_t = (None if out["cutoff_interval"] is None else cutoff_texts(out["cutoff_interval"]))
     costs = ", ".join(f"{k}={v:g}" for k, v in out["costs"].items())
     lines = [
         f"cost-optimal cutoff for {path}: {out['n_rows']} rows, {out['n_positive']} positive"
         + (f" (label {shown(out['labels']['positive'])})" if "labels" in out else ""),
         f"  costs                 {costs}"
         + (f"; capacity {out['capacity']:g} of rows" if out["capacity"] is not None else ""),
-        f"  cutoff                {cutoff_text(out['cutoff'])}   (act when score > cutoff)",
-        f"  same cost for         [{cutoff_text(out['cutoff_range'][0])}, "
-        f"{cutoff_text(out['cutoff_range'][1])}"
-        # a range that reaches 1 for probabilities includes 1 (no row scores above it)
-        + ("]" if out["score_scale"] == "proba" and out["cutoff_range"][1] >= 1.0 else ")"),
-        f"  {level}% interval          [{cutoff_text(out['cutoff_interval'][0])}, "
-        f"{cutoff_text(out['cutoff_interval'][1])}]   (bootstrap, {out['n_resamples']} resamples"
+        f"  cutoff                {cut_t}   (act when score > cutoff)",
+        f"  same cost for         {_same_cost_text(out, lo_t, hi_t)}",
+        f"  {level}% interval          [{ci_t[0]}, {ci_t[1]}]   (bootstrap, "
+        f"{out['n_resamples']} resamples"
         + ("; widened to the same-cost range)" if out.get("cutoff_interval_widened") else ")")
         if out["cutoff_interval"] is not None else "  interval              not computed (--resamples 0)",
         f"  expected cost per row {out['expected_cost']:.6g}",
