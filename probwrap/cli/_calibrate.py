@@ -29,6 +29,7 @@ from ._common import (
     check_row_count,
     clean,
     shown,
+    warn_line,
     whole_number,
 )
 from ._files import check_out_suffix, check_writable, write_table, write_text
@@ -94,11 +95,14 @@ def to_log_odds(scores: np.ndarray, scale: str) -> np.ndarray:
 
 def fit_map(
     log_odds: np.ndarray, y: np.ndarray, *, method: str, folds: int, seed: int | None,
-    sample_weight: np.ndarray | None = None,
+    sample_weight: np.ndarray | None = None, copies: np.ndarray | None = None,
 ) -> Any:
     """Fit :class:`probwrap.CalibrationWrapper` on the scores as a frozen model; return it.
 
-    ``sample_weight`` (e.g. late-label weights) goes to the wrapper's ``fit``.
+    ``sample_weight`` (e.g. late-label weights) goes to the wrapper's ``fit``. ``copies``: the
+    cell of every row when some rows are copies of others (:func:`file_copies`); they ride
+    along as a second column (the frozen model reads the first only), so the wrapper's folds
+    keep each row's copies together as they do for a model's features.
     """
     from sklearn.frozen import FrozenEstimator
 
@@ -108,7 +112,25 @@ def fit_map(
     wrapper = CalibrationWrapper(
         FrozenEstimator(LogOddsColumn().fit()), method=method, cv=folds, random_state=seed
     )
-    return wrapper.fit(log_odds[:, None], y, sample_weight=sample_weight)
+    X = log_odds[:, None] if copies is None else np.column_stack([log_odds, copies])
+    return wrapper.fit(X, y, sample_weight=sample_weight)
+
+
+def file_copies(frame: Any, y: np.ndarray) -> np.ndarray | None:
+    """The cell of every row when some rows of the file are copies of others, else None.
+
+    Copies are told by all the file's columns, as the wrappers tell them by a model's features
+    (:func:`probwrap._heldout.copied_row_cells`): rows identical in every column, one of whose
+    values occurs in no other row, in a column with at least a quarter as many distinct values
+    as there are distinct rows (an id, a measurement with many digits). The score and label
+    alone cannot tell copies from ties (a tree gives many rows one score), so a file of only
+    those two columns is never read as holding copies.
+    """
+    from probwrap._heldout import feature_cells
+
+    if frame.shape[1] < 3:
+        return None
+    return feature_cells(frame, None, np.asarray(y, dtype=np.intp))
 
 
 # -- verbs ---------------------------------------------------------------------------------------
@@ -148,13 +170,21 @@ def _fit(args: argparse.Namespace) -> int:
                 "row(s) of one label; --method auto needs at least two of each to compare maps "
                 "by cross-validation"
             )
+        copies = file_copies(frame, y)
+        if copies is not None:
+            n_copied = int(scores.shape[0] - (int(copies.max()) + 1))
+            warn_line("calibrate", (
+                f"{args.scores}: {n_copied} row(s) repeat another row in every column (a file "
+                "passed twice, an upsampled class); the map's folds keep each row's copies "
+                "together, but the map still counts every copy as a row: drop them if they are "
+                "not real repeats"))
         stages.start("fitting the map")
         try:
             with warnings.catch_warnings(record=True) as caught:
                 warnings.simplefilter("always")
                 wrapper = fit_map(
                     to_log_odds(scores, args.scale), y, method=args.method, folds=args.folds,
-                    seed=args.seed, sample_weight=weights,
+                    seed=args.seed, sample_weight=weights, copies=copies,
                 )
         except ValueError as exc:
             raise DataError(f"{args.scores}: the map cannot be fitted ({exc})") from None
