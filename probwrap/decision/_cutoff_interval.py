@@ -90,7 +90,9 @@ def cutoff_interval(
     [0.50, 0.59] against equally cheap cutoffs from 0.18 to 0.99). Coverage of the population's least-cost cutoff
     is still below the nominal level on small sets (69-94 % for a 95 % interval on 20-50 rows
     of real data, 90-98 % from 100 rows; ``benchmarks/cutoff_interval_small.py``), so with
-    fewer than 100 effective rows (Kish) a :class:`CutoffIntervalCoverageWarning` says so.
+    fewer than 100 effective rows (Kish) a :class:`CutoffIntervalCoverageWarning` says so; with
+    ``groups``, fewer than 100 effective groups (Kish's size of the groups' total weights, the
+    number of groups when they weigh alike), since whole groups are what the resamples draw.
 
     The rows are sorted once; each bootstrap resample only re-weights them (a row drawn ``c``
     times gets ``c`` times its weight) and repeats the cumulative sums, so a resample costs O(n).
@@ -195,10 +197,16 @@ def cutoff_interval(
     tie_low, tie_high = (float(v) for v in whole.interval)
     widened = bool(tie_low < low or tie_high > high)
     low, high = min(low, tie_low), max(high, tie_high)
-    effective = float(wp.sum() ** 2 / np.dot(wp, wp))  # Kish; the row count when unweighted
+    # what the draws resample: rows, or whole groups (Kish's size of their total weights; the
+    # count of rows, or of groups, when unweighted)
+    sizes = wp if unit_of_row is None else np.bincount(unit_of_row, weights=wp,
+                                                       minlength=n_units)
+    effective = float(sizes.sum() ** 2 / np.dot(sizes, sizes))
     if effective < FEW_INTERVAL_ROWS:
+        units = ("(effective) rows" if unit_of_row is None else
+                 f"(effective) groups, the units it resamples ({n} rows in {n_units} groups)")
         warnings.warn(
-            f"the cutoff interval rests on {effective:.3g} (effective) rows, fewer than "
+            f"the cutoff interval rests on {effective:.3g} {units}, fewer than "
             f"{FEW_INTERVAL_ROWS}: on 20-50 rows of real data, 95 % bootstrap intervals covered "
             f"the population's least-cost cutoff in only 69-94 % of draws "
             f"(benchmarks/cutoff_interval_small.py); read [{low:.4g}, {high:.4g}] as the "
