@@ -154,13 +154,3 @@ def test_report_weights_reach_every_group(files, capsys):
         assert g["log_loss"] == pytest.approx(log_loss(rows.low, rows.risk, sample_weight=w),
                                               rel=1e-9)
         assert g["effective_rows"] == pytest.approx(w.sum())  # whole numbers: row counts
-
-
-def test_weight_column_is_binary_only_in_report(files, capsys, tmp_path):
-    root, _ = files
-    with pytest.raises(SystemExit) as stop:
-        main(["report", "--scores", str(root / "w.csv"), "--class-columns", "risk,inv",
-              "--label-column", "low", "--weight-column", "freq", "--out",
-              str(tmp_path / "r.html")])
-    assert stop.value.code == 2
-    assert "--weight-column is available for binary score files only" in capsys.readouterr().err

@@ -174,8 +174,6 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         parser.error("with --class-columns give costs as --cost-matrix, not --cost-fp/--cost-fn")
     if args.batch_size is not None and args.unlabelled is None:
         parser.error("--batch-size needs --unlabelled")
-    if args.weight_column is not None:
-        parser.error("--weight-column is available for binary score files only (--score-column)")
     if args.unlabelled_score_column is not None:
         parser.error("--unlabelled-score-column is for binary score files (--score-column); "
                      "with --class-columns the unlabelled file holds the same class columns")
@@ -225,14 +223,18 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
 
     with Stages("report", ["reading", "computing the report", "writing"]) as stages:
         stages.start("reading")
-        frame = read_table(args.scores, exact=columns, text=_text_columns(args))
+        frame = read_table(args.scores, exact=[*columns, *([args.weight_column]
+                                                           if args.weight_column else [])],
+                           text=_text_columns(args))
         P = probabilities(args.scores, frame)
         y = _class_labels(frame, args, columns)
+        given = read_weights(frame, args.weight_column, args.scores, "report")
         q = None
         if args.unlabelled is not None:
             q = probabilities(args.unlabelled, read_table(args.unlabelled, exact=columns))
         check_row_count("report", P.shape[0], args.scores, "labelled rows")
-        _check_class_rows(y, columns, args.scores)
+        # rows of weight 0 are not judged
+        _check_class_rows(y if given is None else y[given > 0], columns, args.scores)
         if q is not None:
             check_row_count("report", q.shape[0], args.unlabelled, "unlabelled rows")
             if args.batch_size is not None and args.batch_size >= q.shape[0]:
@@ -240,7 +242,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
                     f"{args.unlabelled}: --batch-size {args.batch_size} is not below the file's "
                     f"{q.shape[0]} rows, so there is one batch: the prevalence alarm needs a "
                     "series of batches and cannot judge a drift from one"))
-        extra = {}
+        extra = {} if given is None else {"sample_weight": given}
         if args.group_column is not None:
             extra["groups"] = _group_labels(frame, args.group_column, args.scores)
         if args.cell_column is not None:
@@ -271,6 +273,9 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         line += f", alarms: {'; '.join(fired)}" if fired else ", no prevalence alarm"
     line += group_summary(content, summary)
     line += cell_summary(content, summary)
+    if given is not None:
+        summary["weights"] = weight_summary(args.weight_column, given)
+        line += f"; weighted by {shown(args.weight_column)}"
     _print_summary(args, line, summary)
     return 0
 
