@@ -498,9 +498,10 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                 )
             try:
                 values = self._cross_fit(X, y_arr, splits, est_params, response, classes)
-            except ValueError as exc:
+            except ValueError as exc:  # (numpy's LinAlgError is a ValueError)
                 if not short:
-                    raise
+                    raise ValueError(self._fold_failure(X, y_arr, y_index, classes, splits,
+                                                        est_params, exc)) from exc
                 # the estimator refused a training part that lacks a class: say which and why
                 counts = np.bincount(y_index, minlength=n_classes)
                 rare = [f"{plain(classes[j])!r} ({int(counts[j])} row(s))"
@@ -618,6 +619,41 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         all_rows = np.arange(fold.shape[0])
         new_splits = [(all_rows[kept != i], all_rows[kept == i]) for i in range(n_kept)]
         return new_splits, kept
+
+    def _fold_failure(self, X, y, y_index, classes, splits, est_params, exc) -> str:
+        """Why cross-fitting failed with every class in every training part, in the counts the
+        user controls: the class counts on all rows (the estimator's own message quotes the
+        training part it failed on), whether all rows fit, and the fixes."""
+        name = type(self.estimator).__name__
+        n_classes = classes.shape[0]
+        counts = np.bincount(y_index, minlength=n_classes)
+        parts = np.array([np.bincount(y_index[train], minlength=n_classes)
+                          for train, _ in splits])
+        low, high = parts.min(axis=0), parts.max(axis=0)
+        j = int(np.argmin(counts))
+        shown = ", ".join(f"{plain(classes[k])!r}: {int(counts[k])}" for k in range(n_classes))
+        ranges = ", ".join(
+            f"{plain(classes[k])!r}: {int(low[k])}"
+            + ("" if low[k] == high[k] else f" to {int(high[k])}") for k in range(n_classes))
+        try:
+            clone(self.estimator).fit(X, y, **est_params)
+            fits_all = True
+        except ValueError:
+            fits_all = False
+        smallest = f"the smallest class ({plain(classes[j])!r}, {int(counts[j])} rows)"
+        regularise = "regularise it (its own message below may say how)"
+        if fits_all:
+            fix = (f"It fits on all the rows: use more folds (`cv`; each training part then "
+                   f"holds more of every class), give {smallest} more rows, {regularise}, or "
+                   "pass a model fitted elsewhere inside sklearn.frozen.FrozenEstimator so "
+                   "nothing is refitted here.")
+        else:
+            fix = (f"It fails on all the rows too, so more folds cannot help: give {smallest} "
+                   f"more rows, or {regularise}.")
+        return (f"Cross-fitting `estimator` ({name}) failed on the training part of a fold. "
+                f"Rows per class in all {y.shape[0]} rows: {shown}; in the training parts of "
+                f"the {len(splits)} folds (`cv`): {ranges}. {fix} The estimator said (counting "
+                f"the rows of the training part it was given): {exc}")
 
     def _cross_fit(self, X, y, splits, est_params, response, classes) -> np.ndarray:
         """Held-out ``response`` of a clone fitted on each split's training rows.
