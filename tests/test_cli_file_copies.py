@@ -4,8 +4,8 @@ Rows passed more than once (a file concatenated with itself) land in different f
 ``--method auto`` scores every map on rows it has seen: a flexible map looks better than it is.
 The wrappers keep copies together by a model's features (``_heldout.copied_row_cells``); the
 command line has only a score column, where copies cannot be told from ties, so it tells them
-by all the file's columns (an id, features), and a file of only the score and the label is not
-read as holding copies. Data: scikit-learn's bundled breast-cancer set; GaussianNB fitted on
+by the file's other columns (an id, features), and a file without one is not read as holding
+copies. Data: scikit-learn's bundled breast-cancer set; GaussianNB fitted on
 the first 200 rows scores rows 200-299, passed three times. Measured: isotonic's cross-validated
 log loss 0.132 with the copies in different folds, 0.180 with them kept together (0.216 on the
 rows passed once); auto chose isotonic in 10 of 12 draws of scratch/repro_3.py with copies
@@ -64,9 +64,17 @@ def test_copies_told_by_the_file_stay_in_one_fold(tripled, tmp_path, capsys):
 def test_file_copies_needs_a_column_beside_score_and_label(tripled):
     from probwrap.cli._calibrate import file_copies
 
-    y = tripled["y"].to_numpy()
-    cells = file_copies(tripled, y)
+    used = ["p", "y"]
+    cells = file_copies(tripled, used)
     assert cells is not None and int(cells.max()) + 1 == 100
     assert np.all(cells[:100] == cells[100:200]) and np.all(cells[:100] == cells[200:])
-    assert file_copies(tripled[["p", "y"]], y) is None
-    assert file_copies(tripled.iloc[:100], y[:100]) is None  # no copies
+    assert file_copies(tripled[["p", "y"]], used) is None
+    assert file_copies(tripled.iloc[:100], used) is None  # no copies
+    # constant columns (a weight of 2 on every row) mark no observation: tied scores of a
+    # tree stay independent rows
+    tree = tripled[["p", "y"]].iloc[:100].copy()
+    tree["p"] = np.round(tree["p"], 1)
+    tree["w2"] = 2.0
+    assert tree.duplicated().any()
+    assert file_copies(tree, ["p", "y", "w2"]) is None
+    assert file_copies(tree, used) is None

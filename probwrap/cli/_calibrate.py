@@ -28,6 +28,7 @@ from ._common import (
     check_ranking,
     check_row_count,
     clean,
+    require,
     shown,
     warn_line,
     whole_number,
@@ -116,21 +117,40 @@ def fit_map(
     return wrapper.fit(X, y, sample_weight=sample_weight)
 
 
-def file_copies(frame: Any, y: np.ndarray) -> np.ndarray | None:
+def file_copies(frame: Any, used: list[str]) -> np.ndarray | None:
     """The cell of every row when some rows of the file are copies of others, else None.
 
-    Copies are told by all the file's columns, as the wrappers tell them by a model's features
-    (:func:`probwrap._heldout.copied_row_cells`): rows identical in every column, one of whose
-    values occurs in no other row, in a column with at least a quarter as many distinct values
-    as there are distinct rows (an id, a measurement with many digits). The score and label
-    alone cannot tell copies from ties (a tree gives many rows one score), so a file of only
-    those two columns is never read as holding copies.
+    Copies are told as the wrappers tell them by a model's features
+    (:func:`probwrap._heldout.copied_row_cells`), with the file's other columns (not the
+    score, label or weight columns ``used``) as the features: rows identical in every column,
+    one of whose values in another column occurs in no row outside them, in a column with at
+    least a quarter as many distinct values as there are distinct rows (an id, a measurement
+    with many digits). The score and label alone cannot tell copies from ties (a tree gives
+    many rows one score), so a file without such a column is never read as holding copies.
     """
-    from probwrap._heldout import feature_cells
-
-    if frame.shape[1] < 3:
+    pd = require("pandas")
+    other = [c for c in frame.columns if c not in set(used)]
+    n = int(frame.shape[0])
+    if not other or n < 2:
         return None
-    return feature_cells(frame, None, np.asarray(y, dtype=np.intp))
+    keys = pd.util.hash_pandas_object(frame, index=False).to_numpy()
+    _, cells = np.unique(keys, return_inverse=True)
+    cells = cells.ravel()
+    n_distinct = int(cells.max()) + 1
+    if n_distinct == n:
+        return None
+    size = np.bincount(cells)[cells]
+    exclusive = np.zeros(n, dtype=bool)
+    for column in other:
+        codes = pd.factorize(frame[column], use_na_sentinel=False)[0]
+        counts = np.bincount(codes)
+        if 4 * counts.shape[0] >= n_distinct:
+            exclusive |= counts[codes] == size
+    copies = (size >= 2) & exclusive
+    if not copies.any():
+        return None
+    out = np.where(copies, cells, n_distinct + np.arange(n))
+    return np.unique(out, return_inverse=True)[1].ravel().astype(np.intp)
 
 
 # -- verbs ---------------------------------------------------------------------------------------
@@ -170,7 +190,8 @@ def _fit(args: argparse.Namespace) -> int:
                 "row(s) of one label; --method auto needs at least two of each to compare maps "
                 "by cross-validation"
             )
-        copies = file_copies(frame, y)
+        copies = file_copies(frame, [args.score_column, args.label_column, args.weight_column,
+                                     *(late_columns or [])])
         if copies is not None:
             n_copied = int(scores.shape[0] - (int(copies.max()) + 1))
             warn_line("calibrate", (
