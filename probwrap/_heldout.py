@@ -467,7 +467,12 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             with warnings.catch_warnings():
                 # Tiny classes trigger a warning from StratifiedKFold; they are handled below.
                 warnings.filterwarnings("ignore", message="The least populated class")
-                splits = list(splitter.split(X, y_arr, **split_params))
+                try:
+                    splits = list(splitter.split(X, y_arr, **split_params))
+                except ValueError as exc:
+                    if not isinstance(self.cv if self.cv is not None else 5, numbers.Integral):
+                        raise
+                    raise ValueError(self._too_many_folds(y_index, classes, exc)) from exc
             fold = np.full(n, -1, dtype=int)
             for i, (_, test) in enumerate(splits):
                 if np.any(fold[test] >= 0):
@@ -619,6 +624,20 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         all_rows = np.arange(fold.shape[0])
         new_splits = [(all_rows[kept != i], all_rows[kept == i]) for i in range(n_kept)]
         return new_splits, kept
+
+    def _too_many_folds(self, y_index, classes, exc) -> str:
+        """The stratified splitter refused ``cv`` folds: say so in the user's class counts."""
+        counts = np.bincount(y_index, minlength=classes.shape[0])
+        shown = ", ".join(f"{plain(classes[k])!r}: {int(counts[k])}"
+                          for k in range(classes.shape[0]))
+        k = int(self.cv if self.cv is not None else 5)
+        most = int(counts.max())
+        fix = (f"use `cv={most}` or fewer" if most >= 2 else "give every class at least 2 rows")
+        return (f"`cv={k}` stratified folds need more rows of a class than there are folds, but "
+                f"the {y_index.shape[0]} rows hold {shown} per class: {fix} (better, as many "
+                "rows of every class as folds), or pass a model fitted elsewhere inside "
+                "sklearn.frozen.FrozenEstimator so nothing is refitted here. "
+                f"The splitter said: {exc}")
 
     def _fold_failure(self, X, y, y_index, classes, splits, est_params, exc) -> str:
         """Why cross-fitting failed with every class in every training part, in the counts the

@@ -65,3 +65,19 @@ def test_all_rows_fit_so_more_folds_is_offered_and_works():
     assert "Rows per class in all 36 rows: 0: 6, 1: 30" in text
     assert "0: 4 to 5, 1: 24" in text and "It fits on all the rows: use more folds" in text
     CalibrationWrapper(QuadraticDiscriminantAnalysis(), cv=12).fit(X, y)
+
+
+@pytest.mark.parametrize("wrapper", [CalibrationWrapper, PriorShiftWrapper])
+def test_more_folds_than_rows_of_any_class_names_cv_and_counts(wrapper):
+    # 8 rows, 4 of each class, cv=5: scikit-learn's splitter said only "n_splits=5 cannot be
+    # greater than the number of members in each class"
+    from sklearn.linear_model import LogisticRegression
+
+    X, y = load_breast_cancer(return_X_y=True)
+    idx = np.r_[np.flatnonzero(y == 0)[:4], np.flatnonzero(y == 1)[:4]]
+    with pytest.raises(ValueError) as info:
+        wrapper(LogisticRegression(max_iter=5000), cv=5).fit(X[idx][:, :3], y[idx])
+    text = str(info.value)
+    assert "`cv=5` stratified folds" in text and "0: 4, 1: 4" in text
+    assert "use `cv=4` or fewer" in text
+    wrapper(LogisticRegression(max_iter=5000), cv=4).fit(X[idx][:, :3], y[idx])
