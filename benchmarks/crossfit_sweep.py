@@ -46,6 +46,18 @@ statistic (``fold_spread_variation_``); ``auto`` is read from them for each limi
 ``CalibratedClassifierCV(model, method="sigmoid")``. ``--out FILE`` keeps the cells as JSON;
 ``--sets wide`` (or another group above) runs the same on that group's sets instead.
 
+``--only tiny`` (twentieth session) measures both wrappers on 27-60 training rows against
+scikit-learn's ``CalibratedClassifierCV(model, method="sigmoid")``: the fold-check sets above
+at 30, 45 and 60 rows and statsmodels' nile, elnino and danish_data and scikit-survival's cgvhd
+on half their rows (48, 30, 27, 50), three draws, the fold-check models and three whose fold
+models can go constant on a few rows (a depth-3 tree and a forest with leaves of at least 10
+rows, 25 nearest neighbours). Per cell: ``CalibrationWrapper`` and ``PriorShiftWrapper``
+(before ``adapt``) with their defaults (``cw``, ``psw``), the same fits' map on the refitted
+model and on the fold models (``cw_refit``, ``cw_folds``, ``psw_refit``, ``psw_folds``), and
+the sigmoid; the summary gives the geometric mean ratio, the worst and the cells above 1.10x,
+by size and by model (about half an hour; ``--models a,b`` for some models only, ``--seed K``
+for one draw, ``--out FILE`` keeps the cells as JSON).
+
 ``--only cost-multiclass`` does the same on the sets with more than two classes (errors on
 true class j cost j + 1): ``CostPolicyWrapper(model, C, strategy="tuned")``, the Bayes rule
 on ``CalibrationWrapper(model)``, the Bayes rule on the model's own probabilities and the
@@ -543,7 +555,174 @@ def fold_check_main(argv: list[str]) -> None:
     fold_check_summary(cells)
 
 
+def tiny_sets():
+    """The fold-check sets (scikit-learn's and statsmodels' bundled sets) and four small sets
+    named in docs/small_data.md (nineteenth session): statsmodels' nile (a low-flow year from
+    the three before), elnino (December above its median from January-June) and danish_data
+    (money stock rising next quarter), and scikit-survival's cgvhd (status other than 1,
+    categorical columns one-hot coded)."""
+    import pandas as pd
+    import statsmodels.api as sm
+
+    yield from fold_check_sets()
+    v = sm.datasets.nile.load_pandas().data["volume"].to_numpy(float)
+    yv = v[3:]
+    yield "nile low", np.column_stack([v[2:-1], v[1:-2], v[:-3]]), \
+        (yv < np.median(yv)).astype(int)
+    d = sm.datasets.elnino.load_pandas().data
+    yield "elnino dec", d[["JAN", "FEB", "MAR", "APR", "MAY", "JUN"]].to_numpy(float), \
+        (d.DEC > d.DEC.median()).astype(int).to_numpy()
+    d = sm.datasets.danish_data.load_pandas().data
+    yield "danish rise", d.to_numpy(float)[:-1], \
+        (np.diff(d.iloc[:, 0].to_numpy(float)) > 0).astype(int)
+    try:
+        from sksurv.datasets import load_cgvhd
+    except ImportError:  # scikit-survival is a test extra
+        return
+    X, y = load_cgvhd()
+    yield "cgvhd status not 1", pd.get_dummies(X, dtype=float).to_numpy(float), \
+        (y["status"] != 1).astype(int)
+
+
+def tiny_models() -> dict:
+    """fold_check_models and three models whose fold models can go constant on a few rows."""
+    from sklearn.neighbors import KNeighborsClassifier
+    from sklearn.tree import DecisionTreeClassifier
+
+    return {
+        **fold_check_models(),
+        "tree_leaf10": DecisionTreeClassifier(max_depth=3, min_samples_leaf=10, random_state=0),
+        "forest_leaf10": RandomForestClassifier(n_estimators=50, min_samples_leaf=10,
+                                                random_state=0),
+        "knn25": make_pipeline(StandardScaler(), KNeighborsClassifier(25)),
+    }
+
+
+#: training rows of ``--only tiny``; sets of fewer than 120 rows train on half their rows
+TINY_ROWS = (30, 45, 60)
+
+
+def tiny_cell(model, X, y, tr, te) -> dict:
+    """Test log loss of CalibrationWrapper and PriorShiftWrapper (before adapt) with their
+    defaults, of the same fits' other predicting models, and of scikit-learn's sigmoid."""
+    from probwrap import PriorShiftWrapper
+
+    loss, info = {}, {}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        pw = CalibrationWrapper(clone(model), random_state=0).fit(X[tr], y[tr])
+        loss["cw"] = test_log_loss(pw.predict_proba(X[te]), y[te])
+        info.update(cw_with=pw.predicted_with_, method=pw.method_,
+                    variation=float(pw.fold_spread_variation_),
+                    ratios=pw.refit_spread_ratios_.round(3).tolist(),
+                    capped="capped" in str(getattr(pw, "method_notes_", {}).get(
+                        "temperature", "")))
+        folds = CalibrationWrapper(clone(model), predict_with="fold_models",
+                                   random_state=0).fit(X[tr], y[tr])
+        loss["cw_folds"] = test_log_loss(folds.predict_proba(X[te]), y[te])
+        refit = copy.copy(folds)
+        refit.predicted_with_ = "refit"  # the same map on the refitted model (no cap)
+        loss["cw_refit"] = test_log_loss(refit.predict_proba(X[te]), y[te])
+        if hasattr(model, "predict_proba"):
+            ps = PriorShiftWrapper(clone(model), random_state=0, n_resamples=0)
+            ps.fit(X[tr], y[tr])
+            loss["psw"] = test_log_loss(ps.predict_proba(X[te]), y[te])
+            info["psw_with"] = getattr(ps, "predicted_with_", "refit")
+            est = ps.prior_estimator_
+            fold_proba = ps._fold_proba(X[te])
+            if fold_proba is not None:
+                loss["psw_folds"] = test_log_loss(np.mean(
+                    [est.calibrate_output(f) for f in fold_proba], axis=0), y[te])
+                own = est.calibrate_output(ps._inner_output(X[te], "predict_proba"))
+                loss["psw_refit"] = test_log_loss(own, y[te])
+        try:
+            loss["sk_sigmoid"] = test_log_loss(CalibratedClassifierCV(
+                clone(model), method="sigmoid", cv=5).fit(X[tr], y[tr]).predict_proba(X[te]),
+                y[te])
+        except ValueError:
+            pass
+    return {"loss": loss, **info}
+
+
+def tiny_summary(cells: list) -> None:
+    tiny = 1e-6
+
+    def gm(r):
+        return float(np.exp(np.mean(np.log(r))))
+
+    cells = [c for c in cells if "sk_sigmoid" in c["loss"]]
+    keys = ("cw", "cw_refit", "cw_folds", "psw", "psw_refit", "psw_folds")
+    for rows in ("27-40", "41-60", None):
+        keep = [c for c in cells if rows is None
+                or (c["rows"] <= 40) == (rows == "27-40")]
+        print(f"\n{'all cells' if rows is None else f'{rows} training rows'} ({len(keep)} "
+              "cells): test log loss over scikit-learn's sigmoid, geometric mean | worst | "
+              "cells above 1.10")
+        for k in keys:
+            r = np.array([(c["loss"][k] + tiny) / (c["loss"]["sk_sigmoid"] + tiny)
+                          for c in keep if k in c["loss"]])
+            if r.size:
+                print(f"  {k:>10} {gm(r):6.3f} | {r.max():6.3f} | {int(np.sum(r > 1.10)):3d} "
+                      f"of {r.size}")
+    print("\nby model, all cells: over scikit-learn's sigmoid (geometric mean) of "
+          + ", ".join(keys))
+    for m in sorted({c["model"] for c in cells}):
+        keep = [c for c in cells if c["model"] == m]
+        row = []
+        for k in keys:
+            r = [(c["loss"][k] + tiny) / (c["loss"]["sk_sigmoid"] + tiny) for c in keep
+                 if k in c["loss"]]
+            row.append(f"{gm(r):6.3f}" if r else "     -")
+        print(f"  {m:>14} " + " ".join(row))
+    for k in ("cw", "psw"):
+        worst = sorted((c for c in cells if k in c["loss"]),
+                       key=lambda c: -c["loss"][k] / c["loss"]["sk_sigmoid"])[:6]
+        print(f"\nworst cells of {k} against scikit-learn's sigmoid:")
+        for c in worst:
+            print(f"  {c['set']} | {c['model']} | {c['rows']} rows | seed {c['seed']}: "
+                  + ", ".join(f"{a} {b:.3f}" for a, b in c["loss"].items()))
+
+
+def tiny_main(argv: list[str]) -> None:
+    """``--only tiny``: 27-60 training rows, both wrappers beside scikit-learn's sigmoid."""
+    import json
+
+    seeds = (0, 1, 2) if "--seed" not in argv else (int(argv[argv.index("--seed") + 1]),)
+    models = tiny_models()
+    if "--models" in argv:
+        models = {k: models[k] for k in argv[argv.index("--models") + 1].split(",")}
+    cells = []
+    for name, X, y in tiny_sets():
+        X = np.asarray(X, dtype=float)
+        _, yi = np.unique(np.asarray(y), return_inverse=True)
+        k = int(yi.max()) + 1
+        sizes = (len(yi) // 2,) if len(yi) < 120 else TINY_ROWS
+        for seed in seeds:
+            for n_train in sizes:
+                idx = np.random.default_rng(seed).permutation(len(yi))
+                tr, te = idx[:n_train], idx[n_train:][:2000]
+                if np.bincount(yi[tr], minlength=k).min() < 5:
+                    continue  # fewer rows of a class than scikit-learn's five folds
+                for mname, model in models.items():
+                    try:
+                        c = tiny_cell(model, X, yi, tr, te)
+                    except Exception as exc:  # noqa: BLE001 - counted and shown
+                        print(f"CRASH {name} | {mname} | {n_train}: {type(exc).__name__}: {exc}")
+                        continue
+                    c.update({"set": name, "model": mname, "rows": n_train, "seed": seed})
+                    cells.append(c)
+                    print(f"{name} | {mname} | {n_train} | seed {seed} | {c['method']} "
+                          f"{c['cw_with']}: "
+                          + ", ".join(f"{a} {b:.4f}" for a, b in c["loss"].items()), flush=True)
+    if "--out" in argv:
+        Path(argv[argv.index("--out") + 1]).write_text(json.dumps(cells))
+    tiny_summary(cells)
+
+
 def main(argv: list[str]) -> None:
+    if "--only" in argv and argv[argv.index("--only") + 1] == "tiny":
+        tiny_main(argv)
+        return
     if "--only" in argv and argv[argv.index("--only") + 1] == "fold-check":
         fold_check_main(argv)
         return
