@@ -8,7 +8,9 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
+from sklearn.utils import _safe_indexing, indexable
 
+from ._calibration_wrapper import _PREDICT_WITH, fold_models_predict, spread_check
 from ._cost_policy import SMALL_HELDOUT_ROWS, SUMMARY_BINS
 from ._heldout import (
     HeldOutClassifierBase,
@@ -91,7 +93,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     frozen estimator its own probabilities where the calibration's likelihood-ratio test keeps
     them, for an estimator cross-fitted here always the fitted map, as the test judged the fold
     models and not the refit one; the estimator's own probabilities with
-    ``calibration=None``), re-weighted to the prior in use,
+    ``calibration=None``; of the refit model, or averaged over the fold models, see
+    ``predict_with``), re-weighted to the prior in use,
     ``applied_prior_``: ``target_prior`` when it is given; otherwise, after ``adapt``, the
     source prior moved toward the estimate ``target_prior_`` by the share the evidence
     supports, ``adaptation_weight_ = max(0, 1 - evidence_cutoff_ * (k - 1) / shift_statistic_)``
@@ -194,6 +197,20 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         Beyond 20,000 rows a fit with more classes, ``method="em"`` and ``interval="score"``
         keeps only the labelled summary of its analytic interval (a small covariance matrix);
         other multiclass fits keep the rows.
+    predict_with : {"auto", "refit", "fold_models"}, default="auto"
+        Which model's posteriors the calibration turns into ``predict_proba`` when the wrapper
+        cross-fits its base model and keeps the labelled rows (ignored for a
+        :class:`~sklearn.frozen.FrozenEstimator`). ``"refit"``: the model refitted on all
+        labelled rows (``estimator_``). ``"fold_models"``: each fold model of the
+        cross-fitting, its posteriors through the same calibration, averaged with the folds'
+        shares of the labelled weight — the models the calibration was fitted on and whose
+        average the shift test and the interval already compare; ``adapt`` then estimates
+        from, and re-weights, that average. ``"auto"``: the rule of
+        :class:`~probwrap.CalibrationWrapper`: the fold models when their score spreads on
+        the labelled rows vary from fold to fold (``fold_spread_variation_`` above 0.10)
+        unless the refit spreads more than 1.1 times as widely as every fold model. Measured
+        on 27-60 labelled rows in docs/prior_shift.md, "Which model predicts after
+        cross-fitting" (since 4 December 2026; before, always the refit).
 
     Attributes
     ----------
@@ -205,6 +222,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     confusion_matrix_ : ndarray of shape (n_classes, n_classes)
         Joint confusion matrix of the calibrated held-out predictions, rows predicted, columns
         true, entries summing to one.
+    predicted_with_ : str
+        ``"refit"`` or ``"fold_models"`` (see ``predict_with``), ``"frozen"`` for a
+        :class:`~sklearn.frozen.FrozenEstimator`.
+    refit_spread_ratios_ : ndarray of shape (n_folds,)
+        With a base model cross-fitted here and the labelled rows kept (else empty): the
+        spread of the refitted model's calibration input scores on the labelled rows over
+        each fold model's.
+    fold_spread_variation_ : float
+        The standard deviation of the logs of the fold models' spreads (NaN where not
+        measured; see ``predict_with``).
     calibrator_ : BiasCorrectedScaling or None
         The calibration used for estimation and adjustment.
     known_prior_ : ndarray of shape (n_classes,) or None
@@ -305,6 +332,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         random_state: Any = None,
         tally_resolution: float = 1e-3,
         keep_heldout: bool = False,
+        predict_with: str = "auto",
     ) -> None:
         self.estimator = estimator
         self.target_prior = target_prior
@@ -323,11 +351,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.random_state = random_state
         self.tally_resolution = tally_resolution
         self.keep_heldout = keep_heldout
+        self.predict_with = predict_with
 
     # -- parameters ------------------------------------------------------------------------------
     def _check_params(self) -> None:
         if not isinstance(self.keep_heldout, (bool, np.bool_)):
             raise ValueError(f"`keep_heldout` must be True or False; got {plain(self.keep_heldout)!r}.")
+        if not isinstance(self.predict_with, str) or self.predict_with not in _PREDICT_WITH:
+            raise ValueError(
+                f"`predict_with` must be one of {_PREDICT_WITH}; got {plain(self.predict_with)!r}."
+            )
         if self.method not in PRIOR_METHODS:
             raise ValueError(f"`method` must be one of {PRIOR_METHODS}; got {plain(self.method)!r}.")
         if self.calibration not in CALIBRATIONS:
@@ -445,6 +478,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                     "`cells` out."
                 )
             check_cells(cells, _num_rows(X))
+        self.predicted_with_ = "refit"
+        self.refit_spread_ratios_, self.fold_spread_variation_ = np.empty(0), np.nan
+        self._fold_share = None
         if _multiclass_dask(self.estimator, X, y, sample_weight):
             # Multiclass Dask rows: no tally (a posterior vector has no single score); the
             # calibration, source prior and confusion matrices are fitted by reductions over
@@ -502,7 +538,59 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self._refit_here = est._src_fold is not None
         if est._src_fold is None:
             self._fold_models = None
-        return self._finish_fit(est)
+        self._finish_fit(est)
+        if ho.n_folds == 0:
+            self.predicted_with_ = "frozen"
+        elif self._refit_here:
+            self._choose_predicting_models(X, est)
+        return self
+
+    def _choose_predicting_models(self, X: Any, est: PriorEstimator) -> None:
+        """After a cross-fit whose labelled rows are kept: which models' posteriors the
+        calibration turns into ``predict_proba`` (``predict_with``; the rule of
+        :class:`~probwrap.CalibrationWrapper`, on the spreads of the models' log-probabilities,
+        centred per row, on the labelled rows). With the fold models, the
+        calibrated posteriors of every fold model are averaged with the folds' shares of the
+        labelled weight, the mix the shift test and the interval already compare, and
+        ``adapt``'s estimate reads that same average (``PriorEstimator`` told so by
+        ``_fold_point``)."""
+        from ._calibration_wrapper import _SPREAD_CHECK_MAX_ROWS
+        from .calibration._logodds import clip_from_smallest, proba_to_log_proba
+        from .shift._interval import fold_shares
+
+        n = est._src_fold.shape[0]
+        rows = X
+        if n > _SPREAD_CHECK_MAX_ROWS:  # evenly spaced rows: the check's cost stays bounded
+            rows = _safe_indexing(indexable(X)[0], np.linspace(
+                0, n - 1, _SPREAD_CHECK_MAX_ROWS).astype(np.intp))
+        sets = [self._inner_output(rows, "predict_proba"), *self._fold_proba(rows)]
+        # the log-probabilities floored as CalibrationWrapper floors them (half the smallest
+        # non-zero held-out probability, at least 1e-12), not at the calibration's row bound:
+        # that bound flattens the tails where an unstable model's scales differ
+        held = est._source_rows()[0]
+        positive = held[held > 0]
+        clip = clip_from_smallest(float(positive.min()) if positive.size else np.inf)
+        spreads = []
+        for p in sets:
+            z = proba_to_log_proba(p, clip=clip)
+            z = z - z.mean(axis=1, keepdims=True)
+            sd = float(np.sqrt(np.mean(z.var(axis=0))))
+            # a model that scores every row alike (up to rounding) has no spread
+            spreads.append(sd if sd > 1e-9 * max(1.0, float(np.abs(z).max())) else 0.0)
+        ratios, variation = spread_check(spreads)
+        self.refit_spread_ratios_, self.fold_spread_variation_ = ratios, variation
+        # (a fold model without some class scores it far below the rest, which is not a scale
+        # of its own: "auto" keeps the refit there, as CalibrationWrapper does)
+        complete = all(np.asarray(classes).shape[0] == self.classes_.shape[0]
+                       for _, classes in self._fold_models)
+        if self.predict_with == "fold_models" or (
+                self.predict_with == "auto" and complete
+                and fold_models_predict(ratios, variation)):
+            src = est._source_rows()
+            self.predicted_with_ = "fold_models"
+            self._fold_share = fold_shares(est._src_fold, src[1], src[2],
+                                           int(est._src_fold.max()) + 1)[0]
+            est._fold_point = True
 
     def _warn_weight_reading(self, w: np.ndarray) -> None:
         """One :class:`~probwrap.calibration.WeightScaleWarning` when the calibration's reading
@@ -899,6 +987,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             return self.known_prior_
         return getattr(self, "applied_prior_", self.source_prior_)
 
+    def _calibrated(self, X: Any) -> np.ndarray:
+        """The calibrated posteriors at the source prior: of the refit (or frozen) model, or
+        with ``predicted_with_ == "fold_models"`` each fold model's averaged with the folds'
+        shares (the average ``adapt``'s estimate reads, so re-weighting it is consistent)."""
+        est = self.prior_estimator_
+        if getattr(self, "predicted_with_", "refit") != "fold_models":
+            return est.calibrate_output(self._inner_output(X, "predict_proba"))
+        folds = np.stack([est.calibrate(f) for f in self._fold_proba(X)])
+        return np.tensordot(self._fold_share, folds, axes=1)
+
     def predict_proba(self, X: Any) -> np.ndarray:
         """Calibrated class probabilities re-weighted to ``applied_prior_``, shape (n, n_classes).
 
@@ -909,8 +1007,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         check_fitted(self, "prior_estimator_")
         if _is_dask(X):
             return self._dask_predict(self.predict_proba, X, self.classes_.shape[0])
-        proba = self._inner_output(X, "predict_proba")
-        calibrated = self.prior_estimator_.calibrate_output(proba)
+        calibrated = self._calibrated(X)
         prior = self._prior_in_use()
         if np.max(np.abs(prior - self.source_prior_)) <= 1e-12:  # np.allclose(atol=1e-12), faster
             return calibrated

@@ -599,6 +599,13 @@ class PriorEstimator(_Resampling):
             )
         wk = w * (n_eff / w.sum())  # weights summing to the effective number of rows
         p = self.calibrate(p_raw)
+        refit = self._refit_folds(fold_proba, p_raw.shape[0])
+        if refit is not None and getattr(self, "_fold_point", False):
+            # the wrapper predicts with the fold models (PriorShiftWrapper.predicted_with_):
+            # the estimate reads what it re-weights, the fold-share average of their posteriors
+            kept = self._source_rows()
+            p = np.tensordot(fold_shares(refit[1], kept[1], kept[2], refit[0].shape[0])[0],
+                             refit[0], axes=1)
         src = self.source_prior_
         n_src = getattr(self, "n_source_effective_", None)
         point = self._point(p, wk, src, self.confusion_, self.soft_confusion_, n_source=n_src)
@@ -607,7 +614,6 @@ class PriorEstimator(_Resampling):
             _warn_empty_columns(wk @ p, "predicted probability mass", self._names())
             ml = _solve_prior(p, wk, src, point.prior if np.all(point.prior > 0) else src,
                               float(self.tol), int(self.max_iter))[0]
-        refit = self._refit_folds(fold_proba, p_raw.shape[0])
         u_t = _score_rows(p, src)
         share = None
         if refit is not None:
