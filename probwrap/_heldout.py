@@ -193,11 +193,17 @@ def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray)
     so the held-out predictions point the wrong way (statsmodels' star98, 200 school districts,
     a random forest: held-out log loss 0.36 on row folds against 0.62 on folds of districts, and
     the calibrated test log loss 0.91 against the model's own 0.64). Checked with weights that
-    are not all 1, on 2-d NumPy arrays and DataFrames (other inputs give None). Otherwise, with
+    are not all equal (equal weights of any size, e.g. all 2 or all 1/n, are treated as no
+    weights: before 4 December 2026 any weights other than 1 counted, so rescaling them moved
+    the folds and ``"auto"``'s choice on a forest's tied scores), on 2-d NumPy arrays and
+    DataFrames (other inputs give None). Otherwise, with
     or without weights, the cells of rows that are copies of one another
     (:func:`copied_row_cells`), every other row in a cell of its own, or None.
     """
-    weighted = sample_weight is not None and bool(np.any(np.asarray(sample_weight) != 1.0))
+    # equal weights (of any size: 1, 2, 1/n) say nothing about counts; they leave the folds as
+    # without weights, so rescaling every weight cannot move them
+    sw = None if sample_weight is None else np.asarray(sample_weight, dtype=float).ravel()
+    weighted = sw is not None and sw.size > 0 and bool(np.any(sw != sw[0]))
     n = y_index.shape[0]
     try:
         if hasattr(X, "iloc") and hasattr(X, "columns"):
