@@ -84,3 +84,26 @@ def test_calibrate_fit_with_normalised_weights_equals_no_weights(forest_scores, 
     assert losses_plain.keys() == losses_weighted.keys()
     for name in losses_plain:
         assert losses_weighted[name] == pytest.approx(losses_plain[name], rel=1e-9, abs=1e-12)
+
+
+def test_report_with_normalised_weights_reads_no_groups_of_trials(forest_scores, tmp_path, capsys):
+    # before: "weighted rows with identical forecasts carry different labels ... (k of n)" on a
+    # forest's tied scores whenever the weights were normalised to sum to 1
+    p, y = forest_scores
+    frame = pd.DataFrame({"score": 1.0 - p, "malignant": 1 - y, "w": 1.0 / p.shape[0]})
+    path = tmp_path / "scores.csv"
+    frame.to_csv(path, index=False)
+    code = main(["report", "--scores", str(path), "--score-column", "score", "--label-column",
+                 "malignant", "--weight-column", "w", "--cost-fp", "1", "--cost-fn", "5",
+                 "--resamples", "20", "--out", str(tmp_path / "r.html")])
+    assert code == 0
+    err = capsys.readouterr().err
+    assert "rescaled to sum to Kish's effective sample size" in err  # the weights were read
+    assert "identical forecasts carry different labels" not in err
+    # unequal weights on the same file still raise the note (the rows may be counts)
+    frame.loc[::7, "w"] = 3.0 / p.shape[0]
+    frame.to_csv(path, index=False)
+    main(["report", "--scores", str(path), "--score-column", "score", "--label-column",
+          "malignant", "--weight-column", "w", "--cost-fp", "1", "--cost-fn", "5",
+          "--resamples", "20", "--out", str(tmp_path / "r2.html")])
+    assert "identical forecasts carry different labels" in capsys.readouterr().err
