@@ -245,7 +245,8 @@ def copied_row_cells(X: Any, cells: np.ndarray) -> np.ndarray | None:
 
     A row counts as a copy when another row has exactly its features and one of its values
     occurs in no row outside that group, in a column with at least a quarter as many distinct
-    values as there are distinct rows (of two or more columns): a value that marks one
+    values as there are distinct rows (of two or more columns) whose repeated values are far
+    more than chance gives rows on its grid (:func:`_ties_by_chance`): a value that marks one
     observation, as an age or a measurement with many digits does, passed twice (a file
     concatenated with itself, an upsampled class). Folds that put the copies apart let each fold model see the row it is
     checked on, so the held-out predictions look better than the model is and the calibration
@@ -254,7 +255,9 @@ def copied_row_cells(X: Any, cells: np.ndarray) -> np.ndarray | None:
     times that of the rows passed once (geometric mean of 6 draws; repro in the eighteenth
     session of docs/small_data.md). Rows that merely share common values — the same answers
     to a few multiple-choice questions — are independent draws of the same features and stay
-    in the folds they were given.
+    in the folds they were given, and so do rows that repeat because their measurements are
+    whole numbers (days, years of age: lifelines' waltons data, a tree 1.37 times scikit-learn's
+    sigmoid log loss with such rows kept together, 1.02 times with the folds as given).
     """
     n = cells.shape[0]
     size = np.bincount(cells)[cells]
@@ -273,16 +276,48 @@ def copied_row_cells(X: Any, cells: np.ndarray) -> np.ndarray | None:
     # a single column (tied scores of a tree), are shared by design
     n_distinct = int(cells.max()) + 1
     exclusive = np.zeros(n, dtype=bool)
-    for codes in columns if len(columns) >= 2 else []:
+    for j, codes in enumerate(columns if len(columns) >= 2 else []):
         codes = np.asarray(codes, dtype=np.intp)
         counts = np.bincount(codes)
-        if 4 * counts.shape[0] >= n_distinct:
+        if 4 * counts.shape[0] >= n_distinct and not _ties_by_chance(X, j, counts):
             exclusive |= counts[codes] == size
     copies = shared & exclusive
     if not copies.any():
         return None
     out = np.where(copies, cells, int(cells.max()) + 1 + np.arange(n))
     return np.unique(out, return_inverse=True)[1].ravel().astype(np.intp)
+
+
+def _ties_by_chance(X: Any, j: int, counts: np.ndarray) -> bool:
+    """Whether the repeated values of numeric column ``j`` are as many as rows drawn on its grid
+    would share by chance, so that a repeated value does not mark a copied row.
+
+    The grid is the column's range divided by its smallest gap (whole days from 6 to 75: 70
+    points). ``n`` rows spread evenly over ``G`` points share about ``n (n - 1) / (2 G)`` pairs
+    of equal values (the birthday problem; Feller 1968, vol. 1, ch. II.3, cited from memory); a column counts as tied by
+    chance when the pairs of equal values it holds are fewer than ten times that number (ten:
+    common practice, room for values that are not spread evenly). Copies of rows with
+    measurements to three or more digits hold hundreds of times as many pairs as chance gives
+    them; the durations in whole days of lifelines' waltons data (81 rows, 28 values) hold about
+    twice as many. Text and categorical columns are never tied by chance here (their values are
+    not on a grid).
+    """
+    column = X.iloc[:, j] if hasattr(X, "iloc") else X[:, j]
+    try:
+        values = np.asarray(column, dtype=np.float64)
+    except (TypeError, ValueError):
+        return False
+    if values.ndim != 1 or not np.all(np.isfinite(values)):
+        return False
+    distinct = np.unique(values)
+    if distinct.shape[0] < 2:
+        return True
+    gaps = np.diff(distinct)
+    grid = (distinct[-1] - distinct[0]) / gaps.min() + 1.0
+    n = float(values.shape[0])
+    chance = n * (n - 1.0) / (2.0 * grid)
+    pairs = float(np.sum(counts.astype(np.float64) * (counts - 1.0) / 2.0))
+    return pairs < 10.0 * chance
 
 
 def _row_hashes(X: np.ndarray, block: int = 32_768) -> np.ndarray:
