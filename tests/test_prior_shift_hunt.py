@@ -127,6 +127,13 @@ def test_discrete_features_repeating_by_chance_are_not_copies(cancer):
     grid = (Xa["age"].max() - Xa["age"].min()) + 1
     assert pairs < 10 * 200 * 199 / (2 * grid)
     assert _ties_by_chance(Xa, 0, counts)
+    # ids repeated too evenly for chance are copies: a file of ids 200-299 passed three times
+    # (every id 3 times: dispersion index 0 against chi-squared on 99 degrees of freedom) and
+    # 50 of 300 ids passed twice (an upsampled class: index 125 on 299, lower tail 8e-21)
+    tripled_ids = np.c_[np.tile(np.arange(200, 300), 3), np.zeros(300)]
+    assert not _ties_by_chance(tripled_ids, 0, np.full(100, 3))
+    upsampled = np.r_[np.arange(300), np.repeat(np.arange(50), 2)]
+    assert not _ties_by_chance(np.c_[upsampled, np.zeros(400)], 0, np.bincount(upsampled))
     # measurements to three or more digits passed three times are still copies
     X, y = cancer
     tiled = np.tile(X[:100], (3, 1))
