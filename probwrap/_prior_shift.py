@@ -514,7 +514,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                  and getattr(self, "_fold_models", None) is not None)
         est.fit(ho.values, ho.y_index, ho.sample_weight, effective_rows=rows,
                 class_names=self.classes_, source_fold=ho.fold if refit else None,
-                cells=_count_cells(cells, ho))
+                cells=_count_cells(cells, ho),
+                _weight_owner=None)  # (said in this wrapper's words: _warn_weight_reading)
         if ho.n_folds >= 2 and est.calibrator_ is not None:
             # A base model refit here: the likelihood-ratio test judged the fold models'
             # held-out probabilities, not the refit model's that predict_proba would return,
@@ -956,6 +957,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         may be given if it equals the block length), estimated on the worker that holds it.
         After a fit on Dask input the intervals come from the labelled tally's Poisson
         replicates (binary) or are the point estimate itself (multiclass: no bootstrap).
+
+        Warns
+        -----
+        ImprecisePriorWarning
+            Once per call, naming the batches in which the interval of a class share reaches
+            more than 0.25 from the batch's estimate (as ``adapt`` warns for its one estimate;
+            since 4 December 2026).
         """
         check_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to monitor")
@@ -963,7 +971,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # One batch per Dask block, estimated on the worker holding it.
             from .scale._entry import monitor_dask
 
-            return monitor_dask(self, X, batches, batch_size, sample_weight)
+            table = monitor_dask(self, X, batches, batch_size, sample_weight)
+            self._warn_imprecise_batches(table)
+            return table
         proba = self._inner_output(X, "predict_proba")
         if sample_weight is not None:
             # as in adapt: weights beyond about 1e+-77 are taken as relative ones
@@ -973,13 +983,53 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         est = self.prior_estimator_
         source = getattr(self, "_source_tally", None)
         if source is None or source.n_replicates == 0 or est.n_resamples == 0:
-            return prior_by_batch(
+            table = prior_by_batch(
                 est, proba, batches, batch_size=batch_size, sample_weight=sample_weight,
                 fold_proba=self._fold_proba(X),
             )
-        # Fitted on Dask input: the labelled rows are a tally, so each batch's interval is a
-        # Poisson bootstrap over the tally's replicates and the batch's rows.
-        return tallied_monitor(est, source, proba, batches, batch_size, sample_weight)
+        else:
+            # Fitted on Dask input: the labelled rows are a tally, so each batch's interval is
+            # a Poisson bootstrap over the tally's replicates and the batch's rows.
+            table = tallied_monitor(est, source, proba, batches, batch_size, sample_weight)
+        self._warn_imprecise_batches(table)
+        return table
+
+    def _warn_imprecise_batches(self, table: np.ndarray) -> None:
+        """``monitor``'s :class:`~probwrap.shift.ImprecisePriorWarning`: once per call, naming
+        the batches in which a class share's interval reaches more than ``IMPRECISE_REACH``
+        (0.25) from the batch's estimate (for two classes the share of ``classes_[1]``), by the
+        rule of :meth:`_warn_imprecise`; a batch whose interval is the point itself (no
+        interval) is not named."""
+        if table.shape[0] == 0:
+            return
+        est = np.asarray(table["prior"], dtype=float)
+        reach = np.maximum(est - np.asarray(table["lower"], dtype=float),
+                           np.asarray(table["upper"], dtype=float) - est)
+        if self.classes_.shape[0] == 2:
+            reach = reach[:, 1:]  # the two shares' intervals mirror each other: name one
+        far = np.flatnonzero(np.nanmax(reach, axis=1) > IMPRECISE_REACH)
+        if not far.size:
+            return
+        from .shift import ImprecisePriorWarning
+
+        names = ", ".join(str(plain(table["batch"][i])) for i in far[:8]) + (
+            ", ..." if far.size > 8 else "")
+        i = int(far[0])
+        c = int(np.nanargmax(reach[i])) + (1 if self.classes_.shape[0] == 2 else 0)
+        warnings.warn(
+            f"monitor: in {far.size} of {table.shape[0]} batches (batch {names}) the "
+            f"{self.confidence_level:.0%} interval of a class share reaches more than "
+            f"{IMPRECISE_REACH:g} from the batch's estimate (first, batch "
+            f"{plain(table['batch'][i])}: {plain(self.classes_[c])!r}: estimate "
+            f"{est[i, c]:.3g}, interval [{table['lower'][i][c]:.3g}, "
+            f"{table['upper'][i][c]:.3g}]), so those estimates may be that far from the share "
+            "in their rows: the batches are too small, or the model separates the classes too "
+            "weakly, to pin the share down (docs/prior_shift.md, 'Estimates far from the "
+            "truth'). Read those batches' intervals, not their estimates; larger batches "
+            "narrow them.",
+            ImprecisePriorWarning,
+            stacklevel=3,
+        )
 
     # -- prediction ------------------------------------------------------------------------------
     def _prior_in_use(self) -> np.ndarray:

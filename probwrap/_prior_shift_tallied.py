@@ -55,6 +55,10 @@ def tallied_adapt(
         n_eff = rows if rows is not None else float(w.sum() ** 2 / np.dot(w, w))
         ml_interval = (None if res.ml_prior is None else
                        _widen(interval, res.ml_prior, res.ml_prior, n_eff, est.confidence_level))
+        if ml_interval is not None:
+            # as in memory: the shrunk estimate is kept inside the interval of the shares (the
+            # pull fades where that interval rejects it)
+            res = est._settle_in(res, proba, sample_weight, rows, ml_interval)
         interval = _widen(interval, res.prior, centre, n_eff, est.confidence_level)
     else:
         interval = np.column_stack([np.zeros(k), np.ones(k)])

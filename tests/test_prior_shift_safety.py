@@ -419,14 +419,26 @@ def test_boundary_warning_blames_few_rows_when_the_model_separates_well():
     # about +-2 at the source prior, information 4 against 1 / (0.5 * 0.5) = 4 for a labelled
     # row), so the maximum-likelihood share of 1 is put down to the few rows, not to weak
     # separation.
+    # (Since 4 December 2026 an estimate without an interval, n_resamples=0, is judged by the
+    # likelihood-ratio region of the shares: 30 such rows reject the source share firmly
+    # (p = 1.3e-7), and the warning says the edge is a finding; 5 rows (p = 0.085) do not, and
+    # it puts the edge down to the few rows.)
     rng = np.random.default_rng(12)
     p_src, y_src = binary_gaussian(2000, 0.5, rng, sep=4.0)
     p_new, _ = binary_gaussian(30, 1.0, rng, sep=4.0)
     est = PriorEstimator(n_resamples=0).fit(p_src, y_src)
-    with pytest.warns(BoundaryPriorWarning, match="there are few rows"):
+    with pytest.warns(BoundaryPriorWarning, match="Read the edge as a finding"):
         res = est.estimate(p_new)
     assert res.ml_prior[1] >= 1 - 1e-3 * (1 - est.source_prior_[1])
     assert res.prior[1] < res.ml_prior[1]  # the reported (MAP) prior is shrunk off the edge
+    rng = np.random.default_rng(12)
+    p_src, y_src = binary_gaussian(2000, 0.5, rng, sep=4.0)
+    p_new, _ = binary_gaussian(5, 1.0, rng, sep=4.0)
+    est = PriorEstimator(n_resamples=0).fit(p_src, y_src)
+    with pytest.warns(BoundaryPriorWarning, match="there are few rows"):
+        res = est.estimate(p_new)
+    assert res.ml_prior[1] >= 1 - 1e-3 * (1 - est.source_prior_[1])
+    assert res.prior[1] < res.ml_prior[1] and res.pseudo_rows == 20.0
 
 # -- degenerate estimators ---------------------------------------------------------------------
 @pytest.mark.parametrize("method", ["acc", "pacc", "bbse", "bbse_soft"])

@@ -220,7 +220,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
                 confidence_level=owner.confidence_level, random_state=owner.random_state,
                 prior_strength=owner.prior_strength, interval=owner.interval,
             )
-            est.fit(p, y_idx, w, class_names=classes)
+            est.fit(p, y_idx, w, class_names=classes, _weight_owner=None)  # (the wrapper warns)
             _set_fitted(owner, estimator, classes)
             return est
         est = PriorEstimator(
@@ -459,6 +459,36 @@ def _em_dask(parts, src, init, total, tol, max_iter, pseudo=None, scale=1.0):
     return accelerated_em(em_map, init.copy(), tol, max_iter)
 
 
+def _loglik_block(block, src, prior):
+    """A block's weighted log-likelihood of the shares ``prior`` (Saerens et al. 2002), as
+    ``probwrap.shift._estimate._loglik`` computes it in memory."""
+    p, w = block
+    return np.array(w @ np.log(np.maximum((p / src) @ prior, _TINY)))
+
+
+def _fade_dask(est, parts, point, total, n_eff, suu, stat, pvalue):
+    """``PriorEstimator._fade_pull`` by reductions: the pseudo-rows faded by the evidence of a
+    shift (``faded_strength``, from the rows' Fisher information at the source prior, the sums
+    ``suu`` of the shift test's scores on Kish's scale) and EM re-solved with them from
+    ``point``; returns ``(estimate, pseudo-rows used)``."""
+    from dataclasses import replace
+
+    from ..shift._estimate import faded_strength
+
+    src = est.source_prior_
+    strength = float(est.prior_strength)
+    if strength <= 0:
+        return point, strength
+    used = faded_strength(strength, suu * (n_eff / total), src, stat, src.shape[0] - 1, pvalue,
+                          1.0 - float(est.confidence_level))
+    if used >= strength:
+        return point, strength
+    prior, n_iter, ok, dist = _em_dask(parts, src, point.prior, total, float(est.tol),
+                                       int(est.max_iter), pseudo=used * src, scale=n_eff / total)
+    return replace(point, prior=prior, n_iter=point.n_iter + n_iter, converged=ok,
+                   distance=float(dist)), used
+
+
 def _refit_folds(est: Any, folds: Any) -> tuple | None:
     """``(each fold's share of the labelled weight, the labelled class-score moments with each
     class's rows re-weighted so every fold holds that share)`` for a base model refit on the
@@ -581,32 +611,57 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             else:
                 point = acc_prior(mu[None, :], conf, soft=True)
             prior = point.prior
-        ml = ml_interval = interval = None
-        if method == "em" and getattr(est, "_labelled_cov", None) is not None:
+        from ..shift._estimator import _current_source_score
+        from ..shift._shift_tests import (
+            _null_harm_scale_moments,
+            _score_stat_moments,
+            estimate_amplification,
+        )
+
+        # the shift test (before the interval: where the data reject the shrunk estimate, the
+        # pull fades with its statistic, as in memory)
+        mean = fsu / total
+        cov = fsuu / total - np.outer(mean, mean)
+        source_score = getattr(est, "_source_score", None)
+        test = _score_stat_moments((mean, cov, n_eff), _current_source_score(source_score), k,
+                                    pooled=True, source_prior=src)
+        stat, pvalue = test.statistic, test.pvalue
+        ml = ml_interval = interval = pseudo = None
+        point = PriorEstimate(prior=prior, method=method, n_iter=n_iter, converged=converged,
+                              n_rows=int(n_rows), distance=float(distance))
+        if method == "em":
+            pseudo = float(est.prior_strength)
+
+            def fade(pt):
+                return _fade_dask(est, parts, pt, total, n_eff, suu, stat, pvalue)
+
+        if (method == "em" and int(est.n_resamples) > 0
+                and getattr(est, "_labelled_cov", None) is not None):
             t_mean = fsu / total
             target = (t_mean, fsuu / total - np.outer(t_mean, t_mean), n_eff)
             ml, interval, ml_interval = _analytic_interval(
                 est, estimator, rows, parts, prior, total, n_eff, unit, target,
                 moments=None if refit is None else refit[1])
+            if not est._within(prior, ml_interval):
+                # as in memory: the data reject the shrunk estimate at the interval's level, so
+                # the pseudo-rows fade with the evidence, and what still lies outside moves back
+                # to the interval's end
+                point, pseudo = fade(point)
+                point, interval = est._inside(point, ml, ml_interval)
         elif method == "em":
             # as in memory, every EM estimate has its maximum-likelihood prior (the evidence
-            # gate's amplification below reads it)
+            # gate's amplification below reads it); without an interval the likelihood-ratio
+            # region decides the fade (one more pass, more only where the data reject the
+            # shrunk estimate)
             ml = _ml_prior(est, parts, prior, total)
+            scale = n_eff / total
+            point, pseudo = est._settle_by_likelihood(
+                point, ml, lambda x: scale * float(parts.reduce(_loglik_block, src, x)), fade,
+                pvalue)
+        prior, n_iter, converged, distance = (point.prior, point.n_iter, point.converged,
+                                              point.distance)
     finally:
         parts.release()
-    from ..shift._estimator import _current_source_score
-    from ..shift._shift_tests import (
-        _null_harm_scale_moments,
-        _score_stat_moments,
-        estimate_amplification,
-    )
-
-    mean = fsu / total
-    cov = fsuu / total - np.outer(mean, mean)
-    source_score = getattr(est, "_source_score", None)
-    test = _score_stat_moments((mean, cov, n_eff), _current_source_score(source_score), k,
-                                pooled=True, source_prior=src)
-    stat, pvalue = test.statistic, test.pvalue
     # the same harm scale as in memory (for the max_harm cutoff): from the same sums
     loss = entropy / total
     reference = getattr(est, "_source_log_loss", None)  # the labelled rows' log loss
@@ -636,4 +691,5 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         null_harm_scale=harm_scale,
         ml_prior=ml,
         ml_interval=ml_interval,
+        pseudo_rows=pseudo,
     )

@@ -7,6 +7,7 @@ estimators (BBSE, ACC, PACC) and the binomial interval in ``_confusion``.
 from __future__ import annotations
 
 import warnings
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -28,6 +29,8 @@ __all__ = [
     "PriorIntervalConflictWarning",
     "kish_weights",
     "evidence_strength",
+    "faded_strength",
+    "rejection_reach",
 ]
 
 
@@ -598,17 +601,40 @@ def evidence_strength(
     >>> round(evidence_strength(20.0, p, np.ones(4), np.array([0.5, 0.5]), 50.0, 1), 4)
     0.0408
     """
+    if float(w.sum()) <= 0:
+        return float(strength)
+    q = p / src
+    u = q[:, 1:] - q[:, :1]
+    info = (u * w[:, None]).T @ u  # information of all the rows, (k - 1, k - 1)
+    return faded_strength(strength, info, src, statistic, dof, pvalue, alpha)
+
+
+def faded_strength(
+    strength: float,
+    info: np.ndarray,
+    src: np.ndarray,
+    statistic: float | None,
+    dof: int,
+    pvalue: float | None = None,
+    alpha: float | None = None,
+) -> float:
+    """:func:`evidence_strength` from the rows' Fisher information ``info`` about the shares
+    at the source prior, ``sum_n w_n u_n u_n'`` with ``u = p[:, 1:] / src[1:] - p[:, :1] /
+    src[0]`` (shape (k - 1, k - 1); the Dask and Spark reductions hold it as a sum of blocks).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift._estimate import faded_strength
+    >>> faded_strength(20.0, np.array([[2.0]]), np.array([0.5, 0.5]), 9.0, 1, 1e-3, 0.05)
+    0.0625
+    """
     strength = float(strength)
     if strength <= 0 or statistic is None or not np.isfinite(statistic) or statistic <= dof:
         return strength
     if pvalue is not None and alpha is not None and not pvalue < alpha:
         return strength
-    total = float(w.sum())
-    if total <= 0:
-        return strength
-    q = p / src
-    u = q[:, 1:] - q[:, :1]
-    info = (u * w[:, None]).T @ u  # information of all the rows, (k - 1, k - 1)
+    info = np.atleast_2d(np.asarray(info, dtype=float))
     curvature = np.diag(1.0 / src[1:]) + 1.0 / src[0]
     n_info = float(np.trace(np.linalg.solve(curvature, info))) / max(dof, 1)
     if not np.isfinite(n_info) or n_info <= 0:
@@ -619,3 +645,47 @@ def evidence_strength(
 def _loglik(p: np.ndarray, w: np.ndarray, src: np.ndarray, pi: np.ndarray) -> float:
     mix = (p / src) @ pi
     return float(w @ np.log(np.maximum(mix, np.finfo(float).tiny)))
+
+
+def rejection_reach(
+    loglik: Callable[[np.ndarray], float],
+    ml: np.ndarray,
+    x: np.ndarray,
+    top: float,
+    cutoff: float,
+) -> float:
+    r"""How far from the maximum-likelihood prior ``ml`` toward ``x`` the data do not reject.
+
+    The likelihood-ratio statistic of a prior :math:`\pi` is
+    :math:`2\,(\ell(\hat\pi) - \ell(\pi))` with :math:`\ell` the log-likelihood of the
+    unlabelled rows (:func:`prior_log_likelihood`, Saerens et al. 2002, section 2.3) and
+    :math:`\hat\pi` = ``ml`` its maximum (``top`` = :math:`\ell(\hat\pi)`); the priors it does
+    not reject at a level form the likelihood-ratio region whose edge is where the statistic
+    equals the chi-square quantile ``cutoff`` on ``k - 1`` degrees of freedom (Wilks 1938; at
+    a share of 0 or 1 the reference distribution is a mixture with less mass in the tail, so
+    the region is, if anything, too large: Self & Liang 1987). :math:`\ell` is concave, so along
+    the segment ``ml + lam (x - ml)`` the statistic rises with ``lam``: the returned ``lam`` in
+    [0, 1] is 1 when ``x`` itself is not rejected and otherwise the root (SciPy's ``brentq``,
+    to 1e-12). ``loglik(pi)`` evaluates :math:`\ell` on the same weights as ``top`` (Kish's
+    effective rows: the statistic does not depend on the weights' scale).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift._estimate import rejection_reach
+    >>> ell = lambda pi: 100 * np.log(pi[1]) + 100 * np.log(pi[0])   # 100 rows of each class
+    >>> ml = np.array([0.5, 0.5])
+    >>> lam = rejection_reach(ell, ml, np.array([0.1, 0.9]), ell(ml), 3.841)
+    >>> round(0.5 + 0.4 * lam, 4)   # the upper end of the likelihood-ratio interval
+    0.569
+    """
+    from scipy.optimize import brentq
+
+    d = np.asarray(x, dtype=float) - ml
+
+    def excess(lam: float) -> float:
+        return 2.0 * (top - float(loglik(ml + lam * d))) - cutoff
+
+    if excess(1.0) <= 0:
+        return 1.0
+    return float(brentq(excess, 0.0, 1.0, xtol=1e-12))

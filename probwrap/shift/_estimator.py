@@ -12,6 +12,7 @@ from dataclasses import replace
 from typing import Any
 
 import numpy as np
+from scipy.stats import chi2
 from sklearn.utils import check_random_state
 
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
@@ -31,11 +32,13 @@ from ._estimate import (
     FewLabelledRowsWarning,
     PriorEstimate,
     PriorIntervalConflictWarning,
+    _loglik,
     _solve_prior,
     _warn_empty_columns,
     check_class_names,
     evidence_strength,
     name_classes,
+    rejection_reach,
 )
 from ._interval import fold_shares, score_interval
 from ._resample import (  # noqa: F401  (_interval_from_draws: imported from here elsewhere)
@@ -261,6 +264,7 @@ class PriorEstimator(_Resampling):
     def fit(
         self, proba: Any, y: Any, sample_weight: Any = None, *, effective_rows: float | None = None,
         class_names: Any = None, source_fold: Any = None, cells: Any = None,
+        _weight_owner: str | None = "PriorEstimator.fit",
     ) -> PriorEstimator:
         """Learn from held-out posteriors ``proba`` (n, k) and class indices ``y`` in 0..k-1.
 
@@ -275,6 +279,14 @@ class PriorEstimator(_Resampling):
         :func:`probwrap.aggregated.expand_counts`) makes the rows of a cell one unit for the
         shift test and the intervals: the labelled mean score's variance is clustered on the
         cells (:mod:`probwrap.shift._cells`) and the bootstrap draws whole cells.
+
+        ``sample_weight``: the source shares, confusion matrices, shift test and intervals read
+        only their ratios (Kish's effective size), but the calibration (``calibration`` not
+        None) reads them by the calibration maps' rule (docs/weights.md): row counts when they
+        sum to at least the number of rows, otherwise relative. A
+        :class:`~probwrap.calibration.WeightScaleWarning` (once) says when that reading moves
+        with their scale, as ``PriorShiftWrapper.fit`` says for the same calibration (since
+        4 December 2026; ``effective_rows``, a tally's counts, is not warned about).
         """
         self._check_params()
         p = check_proba(proba, name="proba", ndim=2)
@@ -285,6 +297,8 @@ class PriorEstimator(_Resampling):
         w = check_sample_weight(sample_weight, p.shape[0])
         if sample_weight is not None:
             w = rescale_extreme_weights(w, "PriorEstimator.fit", stacklevel=3)
+            if _weight_owner and self.calibration is not None and not effective_rows:
+                self._warn_weight_reading(w, _weight_owner)
         counts = np.bincount(y_idx, weights=w, minlength=k)
         if np.any(counts <= 0):
             raise ValueError(
@@ -330,6 +344,24 @@ class PriorEstimator(_Resampling):
                                 effective_rows) if k > 2 else None
         )
         return self
+
+    @staticmethod
+    def _warn_weight_reading(w: np.ndarray, owner: str) -> None:
+        """One :class:`~probwrap.calibration.WeightScaleWarning` when the calibration's reading
+        of the labelled weights moves with their scale (the maps' rule; the words are shared
+        with the wrappers, :mod:`probwrap._weights`). The wrappers that fit this estimator say
+        it in their own words and pass ``_weight_owner=None``."""
+        from .._weights import count_scale_weights, warn_count_reading
+
+        count_scale_weights(w, owner, "for the calibration (and its test of whether "
+                            "calibrate_output keeps the model's own probabilities)", stacklevel=5)
+        warn_count_reading(
+            w, owner,
+            "the calibration (its test of whether calibrate_output keeps the model's own "
+            "probabilities, its scale prior and output floor) counts",
+            "that test's choice and calibrate_output, and through the calibrated posteriors the "
+            "estimate, the shift test and the interval", stacklevel=5,
+        )
 
     def _summarise(
         self, p: np.ndarray, y_idx: np.ndarray, w: np.ndarray, warm_start: Any = None
@@ -741,6 +773,12 @@ class PriorEstimator(_Resampling):
             # outside is moved back to the interval's end (_inside)
             point, pseudo = self._fade_pull(point, p, wk, src, stat, pvalue)
             point, bounds = self._inside(point, ml, ml_bounds)
+        elif ml is not None and ml_bounds is None and point.identified:
+            # no interval (n_resamples=0, or interval=False): the same decision from the
+            # likelihood-ratio region of the shares, which costs no resampling
+            point, pseudo = self._settle_by_likelihood(
+                point, ml, lambda x: _loglik(p, wk, src, x),
+                lambda pt: self._fade_pull(pt, p, wk, src, stat, pvalue), pvalue)
         if ml is not None:
             self._warn_boundary(ml, p, wk, n_eff, pvalue=pvalue, ml_bounds=ml_bounds,
                                 prior=point.prior, pseudo=pseudo)
@@ -825,6 +863,66 @@ class PriorEstimator(_Resampling):
                                                int(self.max_iter), used)
         return replace(point, prior=prior, n_iter=point.n_iter + n_iter, converged=ok,
                        distance=float(dist)), used
+
+    def _likelihood_cutoff(self) -> float:
+        """The chi-square quantile (``k - 1`` degrees of freedom, the interval's level) that
+        bounds the likelihood-ratio region of the shares."""
+        return float(chi2.ppf(float(self.confidence_level), self.n_classes_ - 1))
+
+    def _settle_by_likelihood(
+        self, point: PriorEstimate, ml: np.ndarray, loglik: Any, fade: Any,
+        pvalue: float | None,
+    ) -> tuple[PriorEstimate, float | None]:
+        """Without an interval: fade the pull where the data reject the shrunk estimate, judged
+        by the likelihood-ratio region of the shares at the interval's level.
+
+        The shrunk estimate is rejected when ``2 (l(ml) - l(prior))`` exceeds the chi-square
+        quantile on ``k - 1`` degrees of freedom (Wilks 1938; ``l`` = ``loglik``, the
+        log-likelihood of Saerens et al. 2002 on Kish's effective rows). Then, as where an
+        interval exists, the pseudo-rows fade with the evidence (``fade(point)`` returns the
+        re-solved estimate and the pseudo-rows used: :meth:`_fade_pull`, or the Dask / Spark
+        reductions), and a faded estimate still rejected moves back toward ``ml`` to the
+        region's edge (:func:`rejection_reach`). For two classes the region is the
+        profile-likelihood interval of the share. The region carries the unlabelled rows'
+        sampling error only, so nothing is done unless the shift test (``pvalue``), which
+        carries the labelled rows' error too, also rejects "no shift" at that level. Where
+        nothing conflicts it costs two evaluations of the likelihood.
+        """
+        strength = float(getattr(self, "prior_strength", 0.0))
+        if strength <= 0 or not (pvalue is not None and np.isfinite(pvalue)
+                                 and pvalue < 1.0 - float(self.confidence_level)):
+            return point, strength
+        top, cutoff = float(loglik(ml)), self._likelihood_cutoff()
+        if 2.0 * (top - float(loglik(point.prior))) <= cutoff:
+            return point, strength
+        point, used = fade(point)
+        lam = rejection_reach(loglik, ml, point.prior, top, cutoff)
+        if lam < 1.0:
+            new = np.clip(ml + lam * (point.prior - ml), 0.0, 1.0)
+            point = replace(point, prior=new / new.sum())
+        return point, used
+
+    def _settle_in(self, res: PriorEstimate, proba: Any, sample_weight: Any,
+                   effective_rows: float | None, ml_bounds: np.ndarray) -> PriorEstimate:
+        """``res`` (from :meth:`estimate` without an interval) kept inside ``ml_bounds``, an
+        interval of the shares built elsewhere (the Poisson bootstrap over tallied rows): the
+        pull fades where ``ml_bounds`` rejects the shrunk estimate (unless it already faded)
+        and what still lies outside moves back to the interval's end, as in :meth:`estimate`.
+        """
+        ml = res.ml_prior
+        if ml is None or not res.identified or self._within(res.prior, ml_bounds):
+            return res
+        p = self.calibrate(proba)
+        w = check_sample_weight(sample_weight, p.shape[0])
+        n_eff = float(effective_rows) if effective_rows else _kish(w)
+        wk = w * (n_eff / w.sum())
+        point, pseudo = res, res.pseudo_rows
+        strength = float(getattr(self, "prior_strength", 0.0))
+        if pseudo is not None and pseudo >= strength:
+            point, pseudo = self._fade_pull(res, p, wk, self.source_prior_,
+                                            res.shift_statistic, res.shift_pvalue)
+        point = self._inside(point, ml, ml_bounds)[0]
+        return replace(point, pseudo_rows=pseudo)
 
     @staticmethod
     def _within(x: np.ndarray, bounds: np.ndarray) -> bool:
@@ -939,36 +1037,53 @@ class PriorEstimator(_Resampling):
                     src[j] * (1 - src[j]) / max(var * n_eff, 1e-300))
 
         alpha = 1.0 - float(self.confidence_level)
+        rejects = pvalue is not None and np.isfinite(pvalue) and pvalue < alpha and (
+            prior is not None)
+        # without an interval, the likelihood-ratio statistic of the source shares (the
+        # log-likelihood is 0 there) against the chi-square quantile of the interval's level
+        lr_source = 2.0 * _loglik(p, w, src, ml) if ml_bounds is None else None
+
+        def firm(j: int) -> bool:
+            if not rejects:
+                return False
+            if ml_bounds is not None:
+                return not ml_bounds[j, 0] <= src[j] <= ml_bounds[j, 1]
+            return lr_source > self._likelihood_cutoff()
+
         # where the data point firmly at the edge, name a class at share 0 (for two classes the
         # one whose share went to 0, e.g. the prevalence of the command line)
         zero = edge[ml[edge] <= 1e-3 * src[edge]]
         j = int(zero[0]) if zero.size else int(edge[0])
-        if not (pvalue is not None and np.isfinite(pvalue) and pvalue < alpha
-                and ml_bounds is not None and prior is not None
-                and not ml_bounds[j, 0] <= src[j] <= ml_bounds[j, 1]):
+        if not firm(j):
             j = int(edge[0])
         se, worth = spread(j)
         why = (
             "the model separates the classes weakly" if worth < 0.25 else "there are few rows"
         )
-        if (pvalue is not None and np.isfinite(pvalue) and pvalue < alpha
-                and ml_bounds is not None and prior is not None
-                and not ml_bounds[j, 0] <= src[j] <= ml_bounds[j, 1]):
+        if firm(j):
             cls = "this class" if ml[j] <= 1e-3 * src[j] else "the other classes"
             pulled = (
                 f"pulled toward the source share by {pseudo:.2g} pseudo-rows (the pull fades as "
                 "the evidence of a shift grows)" if pseudo else "not pulled toward the source"
             )
+            if ml_bounds is not None:
+                against = (f"the {self.confidence_level:.0%} interval of the share "
+                           f"[{ml_bounds[j, 0]:.3g}, {ml_bounds[j, 1]:.3g}] excludes the "
+                           "source share")
+                where = "lies inside the interval"
+            else:
+                against = (f"the likelihood ratio rejects the source shares at the "
+                           f"{self.confidence_level:.0%} level (2 x log-likelihood ratio "
+                           f"{lr_source:.3g})")
+                where = "is one the data do not reject at that level"
             warnings.warn(
                 f"The maximum-likelihood share of {name_classes(j, self._names())} is at the "
                 f"edge ({ml[j]:.4g}; source share {src[j]:.4g}), and the data point there "
-                f"firmly: the shift test rejects no shift (p = {pvalue:.2g}), the "
-                f"{self.confidence_level:.0%} interval of the share [{ml_bounds[j, 0]:.3g}, "
-                f"{ml_bounds[j, 1]:.3g}] excludes the source share, and each of the "
-                f"{n_eff:.4g} effective unlabelled rows carries about {worth:.2g} of a labelled "
-                "row's information about it. Read the edge as a finding (these rows may hold no "
-                f"member, or nearly none, of {cls}); the reported share "
-                f"{prior[j]:.3g} is {pulled} and lies inside the interval.",
+                f"firmly: the shift test rejects no shift (p = {pvalue:.2g}), {against}, and "
+                f"each of the {n_eff:.4g} effective unlabelled rows carries about {worth:.2g} "
+                "of a labelled row's information about it. Read the edge as a finding (these "
+                f"rows may hold no member, or nearly none, of {cls}); the reported share "
+                f"{prior[j]:.3g} is {pulled} and {where}.",
                 BoundaryPriorWarning,
                 stacklevel=3,
             )
