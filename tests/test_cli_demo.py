@@ -86,8 +86,8 @@ def _prevalence_content(**kw):
 
 
 def test_demo_prints_each_estimate_with_its_own_interval():
-    # The shrunk estimate (0.0650) lies outside the maximum-likelihood estimate's interval; the
-    # widened interval [0.0650, 0.1133] belongs to neither estimate and is not printed. The
+    # The shrunk estimate (0.0650; as an estimate from before 4 December 2026 could) lies outside
+    # the maximum-likelihood estimate's interval; the widened interval [0.0650, 0.1133] belongs to neither estimate and is not printed. The
     # maximum-likelihood estimate is printed with its own interval, the shrunk value and the
     # prevalence the rules apply (the source moved half the way: 0.05 + 0.5 * 0.015) on their
     # own lines.
@@ -97,9 +97,21 @@ def test_demo_prints_each_estimate_with_its_own_interval():
     first = lines[0].split()
     assert first[3] == "0.0912" and "[0.0701, 0.1133]" in lines[0]
     assert "0.0650" not in lines[0]
-    assert lines[1].split()[3] == "0.0650" and "outside the interval" in lines[1]
+    assert lines[1].split()[3] == "0.0650"
+    # since 4 December 2026 a shrunk estimate the data reject is not reported (its pull fades
+    # and it is kept inside the interval), so the demo no longer labels one "outside the
+    # interval"; without pseudo-rows on the content nothing is added
+    assert "outside" not in lines[1] and "faded" not in lines[1]
     assert lines[2].split()[4] == "0.0575" and "50%" in lines[2]
     assert not any("[0.0650" in t for t in lines)
+    # a faded pull (1.7 of 20 pseudo-rows) is named, with the shrunk value inside the interval
+    lines = prevalence_lines(_prevalence_content(target_prevalence=0.0720, prior_strength=20.0,
+                                                 pseudo_rows=1.7), 0.1)
+    assert lines[1].split()[3] == "0.0720"
+    assert "pull faded to 1.7 of 20 rows" in lines[1] and "inside the interval" in lines[1]
+    lines = prevalence_lines(_prevalence_content(target_prevalence=0.0720, prior_strength=20.0,
+                                                 pseudo_rows=20.0), 0.1)
+    assert "faded" not in lines[1]
     # inside the interval: no warning; no evidence: the rules do not move
     lines = prevalence_lines(_prevalence_content(target_prevalence=0.08, adaptation_weight=0.0,
                                                  applied_prevalence=0.05), 0.1)

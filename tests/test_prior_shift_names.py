@@ -120,6 +120,12 @@ def test_report_shows_the_shrunk_estimate_beside_the_interval_of_the_estimate(
     np.testing.assert_allclose(res.interval, res.ml_interval)  # nothing stretched
     assert res.pseudo_rows < 20
     assert "shrunk value lies outside the interval" not in page.text
+    # the page says what happened instead: the pull faded to the estimator's pseudo-rows (the
+    # sentence of a fixed pull that could no longer be true was removed, 4 December 2026)
+    assert content.pseudo_rows == pytest.approx(res.pseudo_rows)
+    assert f"as if {res.pseudo_rows:.2g} labelled rows at the source prevalence" in page.text
+    assert "the pull faded with the evidence of a shift" in page.text
+    assert "lies inside the interval" in page.text
     # the boundary note names the class by its label
     notes = " ".join(n.message for n in content.notes)
     assert "class 'not improved'" in notes and "class index" not in notes

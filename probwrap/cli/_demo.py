@@ -269,6 +269,8 @@ def share_lines(c: Any, true_shares: Any) -> list[str]:
             + (f"{c.target_prior[j]:>9.4f}" if c.ml_prior is not None else "")
             + (f"{applied[j]:>9.4f}" if applied is not None else "")
             + f"{true_shares[j]:>36.4f}")
+    if faded_note(c):
+        lines.append("  (shrunk:" + faded_note(c)[3:])
     if applied is not None:
         w = c.adaptation_weight
         lines.append("  (shrunk: toward the summer shares; applied: what the rules use, "
@@ -304,6 +306,17 @@ def _three_way_handler(args: argparse.Namespace) -> int:
     return 0
 
 
+def faded_note(c: Any) -> str:
+    """A note after the shrunk estimate when its pull toward the summer share(s) faded: the
+    winter rows rejected the estimate with all ``prior_strength`` pseudo-rows, so fewer were
+    used (``pseudo_rows``) and the shrunk value lies inside the interval; "" otherwise."""
+    strength, used = getattr(c, "prior_strength", None), getattr(c, "pseudo_rows", None)
+    if strength is None or used is None or used >= strength:
+        return ""
+    return (f"  (pull faded to {used:.2g} of {strength:g} rows: the winter rows reject the full "
+            "pull; inside the interval)")
+
+
 def prevalence_lines(c: Any, true_share: float) -> list[str]:
     """The winter prevalence as the report shows it: the maximum-likelihood estimate with its
     own interval, the shrunk estimate on its own line (never beside an interval widened to
@@ -317,10 +330,7 @@ def prevalence_lines(c: Any, true_share: float) -> list[str]:
     span = f"  [{iv[0]:.4f}, {iv[1]:.4f}] ({level})" if iv is not None else ""
     lines = [f"  winter prevalence (est.)   {ml:.4f}{span}  maximum likelihood  {truth}"]
     if c.ml_prevalence is not None:
-        outside = iv is not None and not iv[0] <= c.target_prevalence <= iv[1]
-        lines.append(f"  shrunk toward summer       {c.target_prevalence:.4f}"
-                     + ("  (outside the interval: a cautious value, not an estimate)"
-                        if outside else ""))
+        lines.append(f"  shrunk toward summer       {c.target_prevalence:.4f}" + faded_note(c))
     weight = getattr(c, "adaptation_weight", None)
     if weight is not None and c.applied_prevalence is not None:
         moved = ("not moved: too little evidence of a shift" if weight <= 0 else

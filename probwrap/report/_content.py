@@ -109,6 +109,9 @@ class ReportContent:
     ml_prevalence: float | None = None
     ml_interval: tuple[float, float] | None = None
     prior_strength: float | None = None
+    #: the pseudo-rows the shrunk estimate used: ``prior_strength``, or fewer where the data
+    #: rejected the estimate with all of them (``PriorEstimate.pseudo_rows``)
+    pseudo_rows: float | None = None
     shift_statistic: float | None = None
     shift_pvalue: float | None = None
     n_unlabelled: int = 0
@@ -225,6 +228,8 @@ def _maximum_likelihood(content: Any, res: Any, strength: Any) -> None:
     if iv is not None:
         content.ml_interval = (float(iv[1, 0]), float(iv[1, 1]))
     content.prior_strength = None if strength is None else float(strength)
+    used = getattr(res, "pseudo_rows", None)
+    content.pseudo_rows = None if used is None else float(used)
 
 
 def collect_content(

@@ -80,6 +80,9 @@ class MulticlassReportContent:
     ml_prior: np.ndarray | None = None
     ml_interval: np.ndarray | None = None
     prior_strength: float | None = None
+    #: the pseudo-rows the shrunk estimate used: ``prior_strength``, or fewer where the data
+    #: rejected the estimate with all of them (``PriorEstimate.pseudo_rows``)
+    pseudo_rows: float | None = None
     #: the shares the wrapper's evidence gate applies (``PriorShiftWrapper.applied_prior_``:
     #: the source shares moved ``adaptation_weight`` of the way to ``target_prior``); the
     #: rules move to these
@@ -122,6 +125,8 @@ def _maximum_likelihood(content: Any, res: Any, strength: Any) -> None:
     iv = getattr(res, "ml_interval", None)
     content.ml_interval = None if iv is None else np.asarray(iv, dtype=float)
     content.prior_strength = None if strength is None else float(strength)
+    used = getattr(res, "pseudo_rows", None)
+    content.pseudo_rows = None if used is None else float(used)
 
 
 def _class_alarms(content: MulticlassReportContent, fitted: Any, notes: NoteLog,

@@ -209,6 +209,30 @@ def _decisions(c: MulticlassReportContent, figures: dict[str, str]) -> str:
     return "".join(parts)
 
 
+def pull_words(c: Any, toward: str, level: str) -> tuple[str, str]:
+    """How far the shrunk estimate was pulled toward the ``toward`` (the source prevalence or
+    shares), for the prevalence section: ``(words in brackets, a sentence or "")``.
+
+    The pull is ``prior_strength`` pseudo-rows unless the unlabelled rows reject the estimate
+    with all of them at the interval's level; then it fades with the evidence of a shift to
+    ``pseudo_rows`` and the shrunk estimate lies inside the interval (``PriorEstimate``, since
+    4 December 2026), which the sentence says. (Before, a fixed pull could hold the shrunk
+    value outside the interval, and the page said so.)
+    """
+    strength = getattr(c, "prior_strength", None)
+    used = getattr(c, "pseudo_rows", None)
+    if strength is None:
+        return f"toward the {toward}", ""
+    if used is None or used >= strength:
+        return f"as if {strength:g} labelled rows at the {toward} were added", ""
+    return (
+        f"as if {used:.2g} labelled rows at the {toward} were added",
+        f" Here the unlabelled rows reject, at the {level} level, the estimate shrunk by the "
+        f"full {strength:g} rows, so the pull faded with the evidence of a shift (to "
+        f"{used:.2g} rows) and the shrunk value lies inside the interval.",
+    )
+
+
 def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
     parts = ['<section id="prevalence"><h2><span class="pw-num">3</span>Class shares</h2>']
     if c.target_prior is None:
@@ -224,9 +248,7 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
     # both, the interval with the estimate it belongs to (not widened to the other)
     both = ml is not None and float(np.max(np.abs(ml - c.target_prior))) >= 5e-5
     iv = ml_iv if ml_iv is not None else c.target_interval
-    strength = getattr(c, "prior_strength", None)
-    pull = (f"as if {strength:g} labelled rows at the source shares were added"
-            if strength is not None else "toward the source shares")
+    pull, faded = pull_words(c, "source shares", level)
     applied = getattr(c, "applied_prior", None)
     weight = getattr(c, "adaptation_weight", None)
     if weight is None:
@@ -265,17 +287,12 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         f"shares changed (prior shift). {verdict}</p>"
     )
     if both:
-        outside = iv is not None and bool(np.any(
-            (c.target_prior < iv[:, 0]) | (c.target_prior > iv[:, 1])))
         parts.append(
             f'<p id="prevalence-shrunk">The {level} intervals are confidence intervals for the '
             "class shares of the population the unlabelled rows come from, around the "
             "maximum-likelihood estimate. The rules start from that estimate shrunk toward the "
             f"source shares ({pull}), so that a noisy estimate does not move every decision."
-            + (" Here a shrunk share lies outside its interval: the unlabelled rows are too few "
-               "to outweigh the pull toward the labelled shares. Read the moved rules as "
-               "cautious, not as an estimate of the new shares." if outside else "")
-            + "</p>"
+            + faded + "</p>"
         )
     if applied is not None:
         parts.append(gate_sentence(weight, "class shares"))

@@ -16,7 +16,7 @@ from ._cells import reliability_diagram, unit_words, widened_words
 from ._common import draw_figure, figure_notes
 from ._content import BAYES_NAME, HALF_NAME, ReportContent
 from ._general_groups import multiclass_group_section
-from ._general_html import general_figures, general_glance, general_sections
+from ._general_html import general_figures, general_glance, general_sections, pull_words
 from ._groups_html import group_section
 from ._html_parts import (
     _cut,
@@ -249,9 +249,7 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
             f"{level} interval{whose}, high</td>{_num(iv[1])}</tr>"
             if iv is not None else ""
         )
-        strength = getattr(c, "prior_strength", None)
-        pull = (f"as if {strength:g} labelled rows at the source prevalence were added"
-                if strength is not None else "toward the source prevalence")
+        pull, faded = pull_words(c, "source prevalence", level)
         if both:
             estimate_rows = (
                 f'<tr data-item="target_ml"><td>estimated target prevalence, maximum '
@@ -300,20 +298,13 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
             f"{_positive(c)} and {_class_pair(c)[0]} changed (prior shift). {verdict}</p>"
         )
         if both:
-            outside = iv is not None and not iv[0] <= c.target_prevalence <= iv[1]
             parts.append(
                 f'<p id="prevalence-shrunk">The {level} interval is a confidence interval for '
                 "the prevalence of the population the unlabelled rows come from, around the "
                 "maximum-likelihood estimate; it carries the sampling error of both the labelled "
                 "and the unlabelled rows. The rules start from that estimate shrunk toward the "
                 f"source prevalence ({pull}), so that a noisy estimate does not move every "
-                "decision."
-                + (f" Here the shrunk value lies outside the interval: the data reject it at the "
-                   f"{level} level, and {c.n_unlabelled or 'the'} unlabelled rows are too few to "
-                   "outweigh the pull toward the labelled prevalence. Read the moved cutoff as "
-                   "cautious, not as an estimate of the new prevalence."
-                   if outside else "")
-                + "</p>"
+                "decision." + faded + "</p>"
             )
         if c.applied_prevalence is not None and c.adaptation_weight is not None:
             parts.append(gate_sentence(c.adaptation_weight, "prevalence"))
