@@ -175,7 +175,8 @@ def reference_estimator(
         n_resamples=n_resamples,
         confidence_level=confidence_level,
         random_state=seed,
-    ).fit(two_columns(ref_proba), ref_y, sample_weight=reference_weight, cells=reference_cells)
+    ).fit(two_columns(ref_proba), ref_y, sample_weight=reference_weight, cells=reference_cells,
+          _weight_owner=None)  # (rescaled to Kish's size on purpose: nothing to warn about)
 
 
 def source_baseline_standard_error(

@@ -78,7 +78,8 @@ class PriorEstimate:
     pseudo_rows : float or None
         EM methods: the Dirichlet pseudo-rows the shrunk ``prior`` was computed with —
         ``prior_strength``, or, where the data reject the estimate with that many (it lay
-        outside ``ml_interval``), the count faded by the evidence of a shift
+        outside ``ml_interval``; without an interval, outside the likelihood-ratio region of
+        the shares, :func:`rejection_reach`), the count faded by the evidence of a shift
         (:func:`evidence_strength`). None for other methods.
     null_harm_scale : float or None
         Expected relative increase of the log loss, when nothing moved, per unit of

@@ -155,7 +155,10 @@ class PriorEstimator(_Resampling):
         The interval is always built around the maximum-likelihood estimate; where the data
         reject the shrunk estimate (it lies outside that interval), fewer pseudo-rows are used,
         faded with the evidence of a shift (:func:`~probwrap.shift._estimate.evidence_strength`;
-        ``PriorEstimate.pseudo_rows``), and the estimate is kept inside the interval.
+        ``PriorEstimate.pseudo_rows``), and the estimate is kept inside the interval. Without an
+        interval (``n_resamples=0``) the same is decided from the likelihood-ratio region of
+        the shares (:func:`~probwrap.shift._estimate.rejection_reach`), once the shift test
+        rejects at the interval's level.
     interval : {"score", "bca", "percentile"}, default="score"
         ``"score"``: for two classes, the inverted two-sample score test
         (:func:`score_interval`; no resampling, both samples' error included, honest at the
@@ -354,13 +357,13 @@ class PriorEstimator(_Resampling):
         from .._weights import count_scale_weights, warn_count_reading
 
         count_scale_weights(w, owner, "for the calibration (and its test of whether "
-                            "calibrate_output keeps the model's own probabilities)", stacklevel=5)
+                            "calibrate_output keeps the model's own probabilities)")
         warn_count_reading(
             w, owner,
             "the calibration (its test of whether calibrate_output keeps the model's own "
             "probabilities, its scale prior and output floor) counts",
             "that test's choice and calibrate_output, and through the calibrated posteriors the "
-            "estimate, the shift test and the interval", stacklevel=5,
+            "estimate, the shift test and the interval",
         )
 
     def _summarise(
