@@ -288,3 +288,27 @@ def test_report_words_for_a_faded_pull_with_more_classes():
     full = SimpleNamespace(prior_strength=20.0, pseudo_rows=20.0)
     assert pull_words(full, "source shares", "95%") == (
         "as if 20 labelled rows at the source shares were added", "")
+
+
+def test_tallied_labelled_rows_keep_the_estimate_inside_its_interval(sorted_cancer,
+                                                                     tally_path):
+    # labelled rows fitted on Dask (a tally, forced here) and a bootstrap interval: adapt's
+    # interval comes from one Poisson bootstrap over the tally and the rows (tallied_adapt),
+    # and the estimate from estimate(interval=False); before, the full pull (0.864) lay outside
+    # that interval [0.964, 1]
+    dask = pytest.importorskip("dask")
+    da = pytest.importorskip("dask.array")
+    X, y = load_breast_cancer(return_X_y=True)
+    _, _, lab, unl = sorted_cancer
+    train = np.random.default_rng(0).permutation(len(y))[:200]
+    model = FrozenEstimator(LogisticRegression(max_iter=5000).fit(X[train], y[train]))
+    with dask.config.set(scheduler="synchronous"):
+        w = PriorShiftWrapper(model, interval="bca", n_resamples=100, random_state=0).fit(
+            da.from_array(X[lab], chunks=(100, 30)), da.from_array(y[lab], chunks=100))
+    assert w._source_tally is not None
+    _quiet(lambda: w.adapt(X[unl]))
+    res = w.prior_estimate_
+    lo, hi = res.ml_interval[1]
+    assert res.ml_prior[1] == pytest.approx(1.0) and lo > 0.9
+    assert lo <= w.target_prior_[1] <= hi and res.pseudo_rows < 20
+    np.testing.assert_allclose(w.target_prior_interval_, res.ml_interval)
