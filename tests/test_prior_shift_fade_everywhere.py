@@ -170,7 +170,14 @@ def test_three_classes_without_an_interval_stay_in_the_likelihood_ratio_region(
                    options={"xatol": 1e-10, "fatol": 1e-12, "maxiter": 20000})
     top = -ref.fun
     assert top == pytest.approx(_loglik(res.ml_prior, q), abs=1e-6)
-    cut = chi2.ppf(0.95, 2)
+    # the cutoff: chi2 on one degree of freedom (along the segment from the maximum-likelihood
+    # to the shrunk estimate) over the unlabelled rows' share of the shift test's variance,
+    # T / T_u, with T_u the unlabelled rows' own score statistic n ubar' J^-1 ubar
+    u = q[:, 1:] - q[:, :1]
+    ubar, J = u.mean(axis=0), u.T @ u / u.shape[0]
+    share = min(1.0, res.shift_statistic / (u.shape[0] * ubar @ np.linalg.solve(J, ubar)))
+    assert 0.3 < share < 1.0
+    cut = chi2.ppf(0.95, 1) / share
     full = em_prior(est.calibrate(s[unl]), est.source_prior_, prior_strength=20.0, tol=1e-10)
     assert 2 * (top - _loglik(full.prior, q)) > cut  # before: 0.044 for the absent class
     assert 2 * (top - _loglik(res.prior, q)) <= cut + 1e-6

@@ -654,10 +654,13 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             # region decides the fade (one more pass, more only where the data reject the
             # shrunk estimate)
             ml = _ml_prior(est, parts, prior, total)
+            from ..shift._estimate import unlabelled_share
+
             scale = n_eff / total
+            share = unlabelled_share(stat, su / total, suu / total, n_eff)
             point, pseudo = est._settle_by_likelihood(
                 point, ml, lambda x: scale * float(parts.reduce(_loglik_block, src, x)), fade,
-                pvalue)
+                pvalue, share)
         prior, n_iter, converged, distance = (point.prior, point.n_iter, point.converged,
                                               point.distance)
     finally:

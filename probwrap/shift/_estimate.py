@@ -31,6 +31,7 @@ __all__ = [
     "evidence_strength",
     "faded_strength",
     "rejection_reach",
+    "unlabelled_share",
 ]
 
 
@@ -662,9 +663,10 @@ def rejection_reach(
     unlabelled rows (:func:`prior_log_likelihood`, Saerens et al. 2002, section 2.3) and
     :math:`\hat\pi` = ``ml`` its maximum (``top`` = :math:`\ell(\hat\pi)`); the priors it does
     not reject at a level form the likelihood-ratio region whose edge is where the statistic
-    equals the chi-square quantile ``cutoff`` on ``k - 1`` degrees of freedom (Wilks 1938; at
-    a share of 0 or 1 the reference distribution is a mixture with less mass in the tail, so
-    the region is, if anything, too large: Self & Liang 1987). :math:`\ell` is concave, so along
+    equals a chi-square quantile ``cutoff`` (Wilks 1938; one degree of freedom along a segment,
+    ``k - 1`` for the joint region; at a share of 0 or 1 the reference distribution is a
+    mixture with less mass in the tail, so the region is, if anything, too large: Self & Liang
+    1987). :math:`\ell` is concave, so along
     the segment ``ml + lam (x - ml)`` the statistic rises with ``lam``: the returned ``lam`` in
     [0, 1] is 1 when ``x`` itself is not rejected and otherwise the root (SciPy's ``brentq``,
     to 1e-12). ``loglik(pi)`` evaluates :math:`\ell` on the same weights as ``top`` (Kish's
@@ -690,3 +692,37 @@ def rejection_reach(
     if excess(1.0) <= 0:
         return 1.0
     return float(brentq(excess, 0.0, 1.0, xtol=1e-12))
+
+
+def unlabelled_share(statistic: float | None, mean_score: np.ndarray, info: np.ndarray,
+                     n_eff: float) -> float:
+    r"""The unlabelled rows' share of the shift test's variance, ``min(1, T / T_u)``.
+
+    ``T`` is the two-sample shift test's statistic (its variance carries the labelled rows'
+    error too); ``T_u = n ubar' J^-1 ubar`` is the score test of the unlabelled rows alone
+    (``ubar`` the mean of their scores ``p[:, 1:] / src[1:] - p[:, :1] / src[0]``, ``J`` the
+    mean of their outer products: the per-row Fisher information at the source prior, ``n``
+    Kish's effective rows), which the unlabelled rows' likelihood ratio approximates. For two
+    classes the ratio is ``V_u / (V_u + V_l)``, the unlabelled rows' share of the variance of
+    the mean score; dividing the likelihood-ratio statistic's chi-square cutoff by it widens
+    the likelihood-ratio region so that it carries the labelled rows' error as well (an
+    adjustment of the likelihood's curvature to the variance of its score, in the manner of
+    Chandler & Bate 2007, cited from memory). 1 where it cannot be formed.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift._estimate import unlabelled_share
+    >>> unlabelled_share(6.0, np.array([0.2]), np.array([[1.0]]), 200.0)   # T_u = 8
+    0.75
+    """
+    if statistic is None or not np.isfinite(statistic) or statistic <= 0:
+        return 1.0
+    m = np.atleast_1d(np.asarray(mean_score, dtype=float))
+    try:
+        t_u = float(n_eff) * float(m @ np.linalg.solve(np.atleast_2d(info), m))
+    except np.linalg.LinAlgError:
+        return 1.0
+    if not np.isfinite(t_u) or t_u <= 0:
+        return 1.0
+    return float(min(1.0, float(statistic) / t_u))

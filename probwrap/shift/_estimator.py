@@ -39,6 +39,7 @@ from ._estimate import (
     evidence_strength,
     name_classes,
     rejection_reach,
+    unlabelled_share,
 )
 from ._interval import fold_shares, score_interval
 from ._resample import (  # noqa: F401  (_interval_from_draws: imported from here elsewhere)
@@ -779,9 +780,12 @@ class PriorEstimator(_Resampling):
         elif ml is not None and ml_bounds is None and point.identified:
             # no interval (n_resamples=0, or interval=False): the same decision from the
             # likelihood-ratio region of the shares, which costs no resampling
+            u = _score_rows(p, src)
+            info = (u * (wk / wk.sum())[:, None]).T @ u
+            share = unlabelled_share(stat, (wk / wk.sum()) @ u, info, n_eff)
             point, pseudo = self._settle_by_likelihood(
                 point, ml, lambda x: _loglik(p, wk, src, x),
-                lambda pt: self._fade_pull(pt, p, wk, src, stat, pvalue), pvalue)
+                lambda pt: self._fade_pull(pt, p, wk, src, stat, pvalue), pvalue, share)
         if ml is not None:
             self._warn_boundary(ml, p, wk, n_eff, pvalue=pvalue, ml_bounds=ml_bounds,
                                 prior=point.prior, pseudo=pseudo)
@@ -868,19 +872,22 @@ class PriorEstimator(_Resampling):
                        distance=float(dist)), used
 
     def _likelihood_cutoff(self) -> float:
-        """The chi-square quantile (``k - 1`` degrees of freedom, the interval's level) that
-        bounds the likelihood-ratio region of the shares."""
-        return float(chi2.ppf(float(self.confidence_level), self.n_classes_ - 1))
+        """The chi-square quantile (one degree of freedom, the interval's level) that bounds
+        the likelihood-ratio region along the segment from the maximum-likelihood to the
+        shrunk estimate: the candidates lie on that one-parameter path, so the ratio within
+        it has one degree of freedom (for two classes the profile-likelihood interval)."""
+        return float(chi2.ppf(float(self.confidence_level), 1))
 
     def _settle_by_likelihood(
         self, point: PriorEstimate, ml: np.ndarray, loglik: Any, fade: Any,
-        pvalue: float | None,
+        pvalue: float | None, share: float = 1.0,
     ) -> tuple[PriorEstimate, float | None]:
         """Without an interval: fade the pull where the data reject the shrunk estimate, judged
         by the likelihood-ratio region of the shares at the interval's level.
 
         The shrunk estimate is rejected when ``2 (l(ml) - l(prior))`` exceeds the chi-square
-        quantile on ``k - 1`` degrees of freedom (Wilks 1938; ``l`` = ``loglik``, the
+        quantile on one degree of freedom (Wilks 1938; along the segment from ``ml`` to the
+        shrunk estimate, see :meth:`_likelihood_cutoff`; ``l`` = ``loglik``, the
         log-likelihood of Saerens et al. 2002 on Kish's effective rows). Then, as where an
         interval exists, the pseudo-rows fade with the evidence (``fade(point)`` returns the
         re-solved estimate and the pseudo-rows used: :meth:`_fade_pull`, or the Dask / Spark
@@ -888,14 +895,17 @@ class PriorEstimator(_Resampling):
         region's edge (:func:`rejection_reach`). For two classes the region is the
         profile-likelihood interval of the share. The region carries the unlabelled rows'
         sampling error only, so nothing is done unless the shift test (``pvalue``), which
-        carries the labelled rows' error too, also rejects "no shift" at that level. Where
-        nothing conflicts it costs two evaluations of the likelihood.
+        carries the labelled rows' error too, also rejects "no shift" at that level, and the
+        cutoff is divided by ``share``, the unlabelled rows' share of the test's variance
+        (:func:`unlabelled_share`), which widens the region to carry the labelled rows' error
+        too. Where nothing conflicts it costs two evaluations of the likelihood.
         """
         strength = float(getattr(self, "prior_strength", 0.0))
         if strength <= 0 or not (pvalue is not None and np.isfinite(pvalue)
                                  and pvalue < 1.0 - float(self.confidence_level)):
             return point, strength
-        top, cutoff = float(loglik(ml)), self._likelihood_cutoff()
+        top = float(loglik(ml))
+        cutoff = self._likelihood_cutoff() / min(1.0, max(float(share), 1e-12))
         if 2.0 * (top - float(loglik(point.prior))) <= cutoff:
             return point, strength
         point, used = fade(point)
