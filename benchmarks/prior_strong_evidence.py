@@ -9,10 +9,17 @@ allows). Per cell: mean and largest |estimate - truth| of ``PriorEstimator().est
 ``prior``, how often it lies outside ``ml_interval`` (the interval of the shares), how often the
 reported interval and ``ml_interval`` hold the truth, and the mean distance between the shrunk
 and the maximum-likelihood estimate (docs/prior_shift.md, "Doing no harm", item 1).
+
+``--no-interval``: the same draws with ``PriorEstimator(n_resamples=0)``, which computes no
+interval (the fade is then decided by the likelihood-ratio region of the shares, since
+4 December 2026); per cell the mean and largest |estimate - truth|, the mean pseudo-rows used,
+and how often the estimate lies outside the interval of the shares that the default estimator
+computes on the same draw.
 """
 
 from __future__ import annotations
 
+import argparse
 import warnings
 
 import numpy as np
@@ -56,7 +63,52 @@ def unlabelled_rows(rng, rest, y, target, m):
                            rng.choice(neg, nneg, replace=False)])
 
 
+def main_no_interval() -> None:
+    warnings.simplefilter("ignore")
+    totals: dict[str, list] = {}
+    outside_all = n_all = 0
+    for name, X, y in sets():
+        model = make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000))
+        s = cross_val_predict(model, X, y, cv=5, method="predict_proba")[:, 1]
+        n = len(y)
+        n_lab = min(300, n // 2)
+        for target in TARGETS:
+            errs, used, outside = [], [], 0
+            for seed in range(DRAWS):
+                rng = np.random.default_rng(seed)
+                idx = rng.permutation(n)
+                lab, rest = idx[:n_lab], idx[n_lab:]
+                m = min(200, len(rest))
+                unl = unlabelled_rows(rng, rest, y, target, m)
+                truth = y[unl].mean()
+                r = PriorEstimator(n_resamples=0).fit(two(s[lab]), y[lab]).estimate(two(s[unl]))
+                ref = PriorEstimator(random_state=0).fit(two(s[lab]), y[lab]).estimate(
+                    two(s[unl]))
+                mlo, mhi = ref.ml_interval[1]
+                e = r.prior[1]
+                errs.append(abs(e - truth))
+                used.append(r.pseudo_rows)
+                outside += not (mlo - 1e-12 <= e <= mhi + 1e-12)
+            print(f"{name:14s} target {str(target):5s} n_lab {n_lab:4d} n_unl {m:4d} | "
+                  f"mean|est-truth| {np.mean(errs):.4f}  max {np.max(errs):.4f} | mean "
+                  f"pseudo-rows {np.mean(used):5.2f} | est outside the default's ml_interval "
+                  f"{outside:2d}/{DRAWS}", flush=True)
+            totals.setdefault("none" if target == "none" else "shift", []).extend(errs)
+            outside_all += outside
+            n_all += DRAWS
+    for key, v in totals.items():
+        print(f"ALL {key} (n_resamples=0): mean |est-truth| {np.mean(v):.4f} over {len(v)} draws")
+    print(f"ALL (n_resamples=0): estimate outside the default's ml_interval in {outside_all} of "
+          f"{n_all} draws")
+
+
 def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    parser.add_argument("--no-interval", action="store_true",
+                        help="estimates with n_resamples=0 (no interval)")
+    if parser.parse_args().no_interval:
+        main_no_interval()
+        return
     warnings.simplefilter("ignore")
     totals: dict[str, list] = {}
     outside_all = cover_all = n_all = 0
