@@ -256,9 +256,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         The bootstrap intervals (and more than two classes with a method other than
         ``"em"``) resample the fold models' posteriors of the ``adapt`` rows instead of the
         refit model's, so they carry it too (since 4 December 2026: digits "is an 8", BCa,
-        85.0 % -> 94.5 % at 95 %). Not carried: more than 20,000 two-class Dask or Spark rows
-        (a tally of the refit model's score) and, on Dask or Spark rows, more than two classes
-        with a method other than ``"em"`` or a bootstrap interval (these warn); more than
+        85.0 % -> 94.5 % at 95 %). Not carried: a bootstrap interval on more than 20,000
+        two-class Dask or Spark rows (replicates of a tally of the refit model's score; warns;
+        their score interval reads the fold models' scores as sums on a grid of priors since
+        4 December 2026, docs/scale.md); more than
         20,000 labelled rows without ``keep_heldout=True`` (measured there: 1 draw in 100
         changed at most, no warning; docs/prior_shift.md, "A base model refit on the labelled
         rows").
@@ -740,10 +741,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             scorer = self._fold_scorer()
             res = estimate_multiclass_target(est, self.estimator_, X, sample_weight, rs,
                                              folds=scorer)
-            # (the fold models scored the rows where they live whenever there are any)
-            # (the reductions read them for EM with the default interval only)
-            self._warn_refit_left_out(None if scorer is None or self.method != "em"
-                                      or self.interval != "score" else True)
+            # (the fold models scored the rows where they live whenever there are any, and
+            # every interval computed here reads them: a small set's in-memory estimate with
+            # fold_proba, any interval; more rows, EM's class-moment interval; no warning)
             return self._finish_adapt(res, res.interval)
         if _is_dask(X) or _is_dask(sample_weight):
             # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is
@@ -757,6 +757,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             proba, sample_weight, target, folds = unlabelled_proba_from_dask(
                 self.estimator_, X, sample_weight, n_replicates=est.n_resamples,
                 random_state=rs, resolution=owner_resolution(self), folds=self._fold_scorer(),
+                # more rows: the fold models' scores as sums for the score interval and test
+                moments_of=est if self.interval == "score" and not multiclass else None,
             )
         else:
             proba = self._inner_output(X, "predict_proba")
@@ -770,7 +772,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
             self.interval == "score" and not multiclass
         )
-        self._warn_refit_left_out(folds)
+        self._warn_refit_left_out(None if poisson else folds)
         if poisson:
             # Some rows are tallied: one Poisson bootstrap over tallied and in-memory rows alike.
             res, interval = tallied_adapt(est, source, target, proba, sample_weight, rs,
@@ -784,14 +786,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
     def _warn_refit_left_out(self, folds: Any) -> None:
         """Warn when the base model was refit here and its labelled rows are kept, but the
-        unlabelled rows cannot be scored by the fold models: more than 20,000 two-class Dask or
-        Spark rows (reduced on the workers to a tally of the refit model's score), or more than
-        two classes on Dask or Spark rows with a method other than EM or a bootstrap interval
-        (the reductions read the fold models for EM's default interval only). The interval then
-        leaves out how much the refit moves with the labelled draw. Every interval on rows in
-        memory or collected from a small Dask or Spark set reads the fold models (the score and
-        class-moment intervals, and the bootstrap intervals too since 4 December 2026), so it
-        does not warn."""
+        unlabelled rows' interval cannot read the fold models: a bootstrap interval (``"bca"``,
+        ``"percentile"``) on more than 20,000 two-class Dask or Spark rows, which is drawn
+        from Poisson replicates of the tally of the refit model's score (the score interval
+        there reads the fold models' scores as sums taken where the rows live, since 4
+        December 2026). The interval then leaves out how much the refit moves with the
+        labelled draw. Every interval on rows in memory, on a small Dask or Spark set, and on
+        Dask or Spark rows of more than two classes reads the fold models, so it does not
+        warn."""
         if (folds is not None or not getattr(self, "_refit_here", False)
                 or getattr(self.prior_estimator_, "_src_fold", None) is None
                 or self.prior_estimator_.n_resamples == 0):
@@ -802,11 +804,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             "does not carry how much that refit moves with the draw of the labelled rows; with a "
             "high-variance model on a few hundred rows it can cover several points less than "
             "its level (docs/prior_shift.md, 'A base model refit on the labelled rows'). It is "
-            "carried on rows in memory (every interval) and on Dask or Spark rows except more "
-            "than 20,000 rows of two classes (those are reduced to a tally of the refit "
-            "model's score, which the fold models' scores of each row cannot join) and, with "
-            "more than two classes, a method other than 'em' or a bootstrap interval; or fit "
-            "the base model elsewhere and pass it frozen.",
+            "carried by every interval except a bootstrap one (interval='bca' or "
+            "'percentile') on more than 20,000 rows of two classes, whose replicates are "
+            "drawn from a tally of the refit model's score that the fold models' scores of "
+            "each row cannot join: use interval='score' (the default) there, or fit the base "
+            "model elsewhere and pass it frozen.",
             UserWarning,
             stacklevel=3,
         )

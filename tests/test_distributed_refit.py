@@ -208,21 +208,35 @@ def test_on_a_dask_cluster_the_models_are_one_object_of_the_graph(cancer, digits
     assert len(shared.__dask_graph__()) == 1
 
 
-def test_large_binary_sets_and_bootstrap_intervals_still_warn(cancer, tally_path):
+def test_large_binary_sets_warn_for_bootstrap_intervals_only(cancer, tally_path):
     # more than KEPT_ROWS two-class rows (forced here) come back as a tally of the refit
-    # model's score, which the fold models' scores of each row cannot join: adapt says so
-    _, _, X_new, _, model = cancer
-    _, messages = _caught(lambda: copy.deepcopy(model).adapt(
+    # model's score: the score interval reads the fold models' score sums
+    # (tests/test_distributed_refit_large.py); a bootstrap interval, drawn from the tally's
+    # replicates, cannot, and adapt says so
+    X, y, X_new, _, _ = cancer
+    boot = _quiet(lambda: PriorShiftWrapper(_model(), cv=3, interval="percentile",
+                                            n_resamples=50, random_state=0).fit(X, y))
+    _, messages = _caught(lambda: copy.deepcopy(boot).adapt(
         da.from_array(X_new, chunks=(70, 30))))
-    assert [m for m in messages if REFIT in m and "20,000" in m]
+    assert [m for m in messages if REFIT in m and "20,000" in m and "percentile" in m]
+    _, messages = _caught(lambda: copy.deepcopy(cancer[4]).adapt(
+        da.from_array(X_new, chunks=(70, 30))))
+    assert not [m for m in messages if REFIT in m]
 
 
-def test_multiclass_bootstrap_or_other_methods_still_warn(digits):
+@pytest.mark.parametrize("kind", [dict(method="bbse"), dict(interval="bca", n_resamples=60)])
+def test_multiclass_bootstrap_or_other_methods_carry_the_refit(digits, kind):
+    # before 4 December 2026 these warned that the interval left the refit out, though a small
+    # set's rows came to the client with their fold posteriors and the in-memory estimate read
+    # them (its bootstrap resamples the fold models' posteriors): the result is the in-memory
+    # one exactly, and no warning
     X, y, X_new, _ = digits
-    model = _quiet(lambda: PriorShiftWrapper(_model(), cv=3, method="bbse",
-                                             random_state=0).fit(X, y))
-    _, messages = _caught(lambda: model.adapt(da.from_array(X_new, chunks=(100, 64))))
-    assert [m for m in messages if REFIT in m]
+    model = _quiet(lambda: PriorShiftWrapper(_model(), cv=3, random_state=0, **kind).fit(X, y))
+    mem = _quiet(lambda: copy.deepcopy(model).adapt(X_new))
+    dist, messages = _caught(lambda: copy.deepcopy(model).adapt(
+        da.from_array(X_new, chunks=(100, 64))))
+    assert not [m for m in messages if REFIT in m]
+    _same(dist, mem, atol=1e-12)
 
 
 def test_frozen_model_on_dask_is_unchanged(cancer):

@@ -107,6 +107,22 @@ def test_binary_adapt_on_spark_is_the_in_memory_adapt(spark, cancer):
     assert dist.shift_statistic_ == pytest.approx(direct.shift_statistic, rel=1e-9)
 
 
+def test_large_binary_adapt_on_spark_reads_the_fold_score_sums(spark, cancer, tally_path):
+    # more than KEPT_ROWS rows (forced): a tally of the refit model's score, and one more pass
+    # on the executors for the sums of the fold-averaged score on a grid of priors
+    # (tests/test_distributed_refit_large.py); before 4 December 2026 this warned and read the
+    # refit model only
+    _, _, X_new, model = cancer
+    w = np.random.default_rng(4).uniform(0.5, 2.0, X_new.shape[0])
+    frame = spark.createDataFrame(X_new.assign(w=w)).coalesce(1)
+    mem = _quiet(lambda: copy.deepcopy(model).adapt(X_new, sample_weight=w))
+    dist, messages = _messages(lambda: copy.deepcopy(model).adapt(frame, sample_weight="w"))
+    assert not [m for m in messages if REFIT in m]
+    np.testing.assert_allclose(dist.target_prior_interval_, mem.target_prior_interval_,
+                               rtol=0, atol=1e-6)
+    assert dist.shift_statistic_ == pytest.approx(mem.shift_statistic_, rel=1e-9)
+
+
 @pytest.mark.parametrize("path", ["rows", "sums"])
 def test_multiclass_adapt_on_spark_is_the_in_memory_adapt(spark, digits, request, path):
     if path == "sums":  # the reductions of sets beyond KEPT_ROWS, forced on these rows

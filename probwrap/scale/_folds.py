@@ -97,3 +97,38 @@ def scored_rows(rows: Any, scorer: FoldScorer, unit: float = 1.0) -> tuple:
     kept = rows.map_reduce(kept_scored_block, rows.shared(scorer))
     w = kept.weights / unit if unit != 1.0 else kept.weights
     return kept.proba, kept.fold_list(), w
+
+
+def _fold_moments_block(scorer: FoldScorer, calibrator: Any, src: np.ndarray, share: np.ndarray,
+                        grid: np.ndarray, unit: float, Xb: Any, wb: Any) -> Any:
+    """Sums of the fold-averaged score of one block of unlabelled two-class rows on the grid of
+    priors (:func:`probwrap.shift._fold_moments.fold_score_block`), the fold models' posteriors
+    calibrated by the wrapper's map as in memory (``PriorEstimator.calibrate``)."""
+    from ..shift._fold_moments import fold_score_block
+
+    raw = scorer.fold_proba(Xb)
+    cal = raw if calibrator is None else np.stack([calibrator.predict(f) for f in raw])
+    w = block_weights(wb, raw.shape[1])
+    if unit != 1.0:
+        w = w / unit
+    return fold_score_block(cal, share, src, w, grid)
+
+
+def fold_moments(rows: Any, scorer: FoldScorer, est: Any, unit: float = 1.0) -> Any:
+    """The sums of the fold-averaged score of many unlabelled two-class rows (Dask or Spark
+    rows, see :func:`probwrap.scale._rows.rows_of`), for the shift test and the score interval
+    of ``est`` (a fitted :class:`probwrap.shift.PriorEstimator` whose labelled rows are kept
+    with their folds), in one more pass that scores every block with the fold models where it
+    lives; None where ``est`` would not read them (see ``PriorEstimator._fold_moments``)."""
+    from ..shift._fold_moments import score_grid
+    from ..shift._interval import fold_shares
+
+    fold = getattr(est, "_src_fold", None)
+    source = est._source_rows()
+    if (fold is None or source is None or est._source_row_counts() is not None
+            or est.n_classes_ != 2 or scorer.n_folds != int(fold.max()) + 1):
+        return None
+    share = fold_shares(fold, source[1], source[2], scorer.n_folds)[0]
+    src = np.asarray(est.source_prior_, dtype=float)
+    return rows.map_reduce(_fold_moments_block, rows.shared(scorer), est.calibrator_, src, share,
+                           score_grid(float(src[1])), float(unit))

@@ -178,6 +178,7 @@ def unlabelled_proba_from_rows(
     resolution: float = DEFAULT_RESOLUTION,
     owner: str = "PriorShiftWrapper.adapt",
     folds: Any = None,
+    moments_of: Any = None,
 ):
     """Binary posteriors of unlabelled Dask or Spark rows as tally rows:
     ``(proba (m, 2), weights, tally, fold posteriors)``.
@@ -192,6 +193,10 @@ def unlabelled_proba_from_rows(
     lives, and the rows' posteriors, the fold models' posteriors (one (m, 2) array per fold)
     and the weights all come from that pass, in block order; the last entry is None otherwise
     (no fold models, or a larger set, which comes back as a tally of the refit model's score).
+    A larger set with ``folds`` and ``moments_of`` (the wrapper's fitted
+    :class:`~probwrap.shift.PriorEstimator`, for its score interval): one more pass sums the
+    fold-averaged score on a grid of priors where the rows live
+    (:class:`probwrap.shift._fold_moments.FoldScoreMoments`, the last entry then).
     """
     tally_of_model, engine = _tally_step(X)
     _check_binary(estimator, engine)
@@ -225,4 +230,10 @@ def unlabelled_proba_from_rows(
 
     _warn_binned_rows(owner, tally, stacklevel=5)
     proba, w = tally.to_scores(proba=True)
-    return proba, w, tally, None
+    moments = None
+    if folds is not None and moments_of is not None:
+        from ._folds import fold_moments
+
+        moments = fold_moments(rows_of(X, None, sample_weight, estimator), folds, moments_of,
+                               tally.weight_unit)
+    return proba, w, tally, moments

@@ -474,6 +474,22 @@ class PriorEstimator(_Resampling):
             )
         return np.stack([self.calibrate(f) for f in fp]), fold
 
+    def _fold_moments(self, fold_proba: Any) -> Any:
+        """``fold_proba`` when it is the unlabelled rows' fold-score sums
+        (:class:`probwrap.shift._fold_moments.FoldScoreMoments`, two classes) and the labelled
+        rows are kept with their folds as :meth:`_refit_folds` needs them; else None."""
+        from ._fold_moments import FoldScoreMoments
+
+        if not isinstance(fold_proba, FoldScoreMoments):
+            return None
+        fold = getattr(self, "_src_fold", None)
+        src = self._source_rows()
+        if (fold is None or src is None or self._source_row_counts() is not None
+                or fold.shape[0] != src[1].shape[0] or self.n_classes_ != 2
+                or fold_proba.n_folds != int(fold.max()) + 1):
+            return None
+        return fold_proba
+
     def _names(self) -> tuple | None:
         """Labels of the classes for messages (None: by column index)."""
         return getattr(self, "class_names_", None)
@@ -594,6 +610,9 @@ class PriorEstimator(_Resampling):
             error of the mean posterior (:func:`_cell_floor_rows`), not Kish's count. With
             labelled cells and more than two classes the interval is the BCa bootstrap over
             whole cells.
+            Two classes: a :class:`probwrap.shift._fold_moments.FoldScoreMoments` (the sums of
+            the fold-averaged score of rows that are not at hand, more than 20,000 Dask or
+            Spark rows) serves the shift test and the score interval the same way.
 
         Returns
         -------
@@ -635,7 +654,11 @@ class PriorEstimator(_Resampling):
             )
         wk = w * (n_eff / w.sum())  # weights summing to the effective number of rows
         p = self.calibrate(p_raw)
-        refit = self._refit_folds(fold_proba, p_raw.shape[0])
+        # more than 20,000 two-class Dask or Spark rows: the fold models' scores as sums
+        # (probwrap.shift._fold_moments) instead of one array per fold
+        moments = self._fold_moments(fold_proba)
+        refit = (None if moments is not None or hasattr(fold_proba, "test_moments")
+                 else self._refit_folds(fold_proba, p_raw.shape[0]))
         if refit is not None and getattr(self, "_fold_point", False):
             # the wrapper predicts with the fold models (PriorShiftWrapper.predicted_with_):
             # the estimate reads what it re-weights, the fold-share average of their posteriors
@@ -665,6 +688,8 @@ class PriorEstimator(_Resampling):
             n_test = n_eff
         else:  # the unlabelled rows' mean score clustered on their cells
             m_t, c_t, n_test = cell_mean_cov(u_t, w, cell_t)
+        if moments is not None:  # (cells are refused on Dask or Spark rows)
+            m_t, c_t = moments.test_moments(src)
         source_score = getattr(self, "_source_score", None)
         test = _score_stat_moments((m_t, c_t, n_test), _current_source_score(source_score), k,
                                     pooled=cell_t is None and cell_s is None, source_prior=src)
@@ -700,8 +725,10 @@ class PriorEstimator(_Resampling):
                     source_effective_rows=n_src, confidence_level=self.confidence_level,
                     centre=float((ml if ml is not None else point.prior)[1]),
                     fold_proba=None if refit is None else refit[0],
-                    source_fold=None if refit is None else refit[1],
+                    source_fold=self._src_fold if moments is not None else (
+                        None if refit is None else refit[1]),
                     cells=cell_t, source_cells=cell_s,
+                    target_moments=moments,
                 )
                 if not consistent:
                     warnings.warn(

@@ -176,6 +176,7 @@ def score_interval(
     source_fold: Any = None,
     cells: Any = None,
     source_cells: Any = None,
+    target_moments: Any = None,
 ) -> tuple[np.ndarray, bool]:
     r"""Two-sample score interval for the positive-class prior of unlabelled rows (two classes).
 
@@ -262,6 +263,11 @@ def score_interval(
     cells, source_cells : array-like of shape (n,) / (m,), default=None
         The cell (group of aggregated counts) of every unlabelled / labelled row; that side's
         variance is then clustered on its cells (above). None: every row is its own unit.
+    target_moments : FoldScoreMoments, default=None
+        Instead of ``fold_proba``, for unlabelled rows that are not at hand (more than 20,000
+        Dask or Spark rows): the weighted mean and second moment of their fold-averaged score
+        on a grid of priors, summed where the rows live and interpolated between
+        (:mod:`probwrap.shift._fold_moments`); ``proba`` then only locates the rows' range.
 
     Returns
     -------
@@ -314,6 +320,10 @@ def score_interval(
         fp = fp / src
         share, w_s = fold_shares(source_fold, y_s, w_s, fp.shape[0])
         folds = (fp[:, :, 0], fp[:, :, 1] - fp[:, :, 0], share)
+    elif target_moments is not None:
+        if source_fold is None:
+            raise ValueError("`target_moments` needs `source_fold` (the labelled rows' folds).")
+        w_s = fold_shares(source_fold, y_s, w_s, target_moments.n_folds)[1]
     strata = []  # per class: score pieces, normalised weights, effective rows
     for c in (0, 1):
         rows = y_s == c
@@ -346,20 +356,25 @@ def score_interval(
         out = np.empty(t.shape[0])
         for lo in range(0, t.shape[0], 32):  # memory: rows x 32 at a time
             tc = t[lo:lo + 32]
-            if folds is None:
-                u_t = d_t[:, None] / np.maximum(a_t[:, None] + tc * d_t[:, None], tiny)
-            else:  # each row's score averaged over the fold models
-                a_f, d_f, share_f = folds
-                u_t = np.zeros((a_t.shape[0], tc.shape[0]))
-                for s_k, a_k, d_k in zip(share_f, a_f, d_f, strict=True):
-                    u_t += s_k * d_k[:, None] / np.maximum(a_k[:, None] + tc * d_k[:, None], tiny)
-            m_t = wt @ u_t
-            if cell_t is None:
-                v_t = np.maximum(wt @ (u_t * u_t) - m_t**2, 0.0)
+            if target_moments is not None:  # the rows' sums, taken where they live
+                m_t, v_t = target_moments.moments(tc)
                 comp = v_t / max(n_t - 1.0, 1.0)
-            else:  # clustered on the unlabelled cells (G / (G - 1) sum of squared cell sums)
-                s_t = cell_sums((u_t - m_t) * wt[:, None], cell_t)
-                comp = g_t / max(g_t - 1.0, 1.0) * np.sum(s_t * s_t, axis=0)
+            else:
+                if folds is None:
+                    u_t = d_t[:, None] / np.maximum(a_t[:, None] + tc * d_t[:, None], tiny)
+                else:  # each row's score averaged over the fold models
+                    a_f, d_f, share_f = folds
+                    u_t = np.zeros((a_t.shape[0], tc.shape[0]))
+                    for s_k, a_k, d_k in zip(share_f, a_f, d_f, strict=True):
+                        u_t += s_k * d_k[:, None] / np.maximum(a_k[:, None] + tc * d_k[:, None],
+                                                               tiny)
+                m_t = wt @ u_t
+                if cell_t is None:
+                    v_t = np.maximum(wt @ (u_t * u_t) - m_t**2, 0.0)
+                    comp = v_t / max(n_t - 1.0, 1.0)
+                else:  # clustered on the unlabelled cells (G / (G - 1) sum of squared cell sums)
+                    s_t = cell_sums((u_t - m_t) * wt[:, None], cell_t)
+                    comp = g_t / max(g_t - 1.0, 1.0) * np.sum(s_t * s_t, axis=0)
             m_s = np.zeros(tc.shape[0])
             var = comp
             spread = comp**2 / max(n_t - 1.0, 1.0)

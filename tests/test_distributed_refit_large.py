@@ -1,0 +1,138 @@
+"""More than 20,000 two-class Dask rows after an in-memory fit with a refit base model: the score
+interval and the shift test read the fold models' scores as sums taken where the rows live.
+
+Such rows come back as a tally of the refit model's score, which each row's fold-model scores
+cannot join. The score interval (:func:`probwrap.shift.score_interval`) reads the unlabelled
+rows only through the weighted mean and second moment of the fold-averaged score
+:math:`\\bar u(x; \\pi)` at each candidate prior, so one more pass sums them on a grid of
+priors (0, 1, the source share and log-odds -20..20 by 0.1) and the client interpolates
+(:mod:`probwrap.shift._fold_moments`). Before 4 December 2026 these rows warned and the
+interval read the refit model only (breast cancer, 300 rows forced onto the tally path: interval
+[0.2025, 0.3123] against [0.2053, 0.3155] in memory, shift statistic 9.77 against 9.22; 30,000
+rows, not forced: lower end 0.1761 against 0.1793, statistic 53.5 against 51.1). The
+in-memory path is the reference (itself checked against NumPy in
+tests/test_prior_shift_refit_interval.py); the fold posteriors are also rebuilt with
+scikit-learn's ``StratifiedKFold`` and ``clone``. Data: scikit-learn's bundled breast cancer.
+"""
+
+from __future__ import annotations
+
+import copy
+import warnings
+
+import numpy as np
+import pytest
+from sklearn.base import clone
+from sklearn.datasets import load_breast_cancer
+from sklearn.linear_model import LogisticRegression
+from sklearn.model_selection import StratifiedKFold
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+
+from probwrap import PriorShiftWrapper
+from probwrap.shift._fold_moments import fold_score_block, score_grid
+from probwrap.shift._interval import fold_shares
+
+dask = pytest.importorskip("dask")
+da = pytest.importorskip("dask.array")
+
+REFIT = "does not carry how much that refit moves"
+
+
+@pytest.fixture(autouse=True)
+def _synchronous():
+    with dask.config.set(scheduler="synchronous"):
+        yield
+
+
+def _model():
+    return make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000))
+
+
+def _quiet(fn):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return fn()
+
+
+def _caught(fn):
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        out = fn()
+    return out, [str(c.message) for c in caught]
+
+
+@pytest.fixture(scope="module")
+def cancer():
+    """Breast cancer, "malignant" positive: 250 labelled rows; 300 unlabelled rows resampled
+    from the others at prevalence 0.2 with a little noise (so rows are not copies), weights
+    0.5-2; a refit wrapper (3 folds)."""
+    X, y = load_breast_cancer(return_X_y=True)
+    y = (y == 0).astype(int)
+    rng = np.random.default_rng(3)
+    order = rng.permutation(y.shape[0])
+    lab, pool = order[:250], order[250:]
+    cls = (rng.uniform(size=300) < 0.2).astype(int)
+    rows = np.where(cls == 1, rng.choice(pool[y[pool] == 1], 300),
+                    rng.choice(pool[y[pool] == 0], 300))
+    X_new = X[rows] + rng.normal(0, 0.01, (300, X.shape[1])) * X.std(0)
+    model = _quiet(lambda: PriorShiftWrapper(_model(), cv=3, random_state=0).fit(X[lab],
+                                                                                  y[lab]))
+    return X[lab], y[lab], X_new, rng.uniform(0.5, 2.0, 300), model
+
+
+def _direct_fold_proba(X, y, X_new, seed, n_folds=3):
+    return [clone(_model()).fit(X[train], y[train]).predict_proba(X_new)
+            for train, _ in StratifiedKFold(n_folds, shuffle=True,
+                                            random_state=seed).split(X, y)]
+
+
+@pytest.mark.parametrize("weighted", [False, True])
+def test_large_binary_adapt_reads_the_fold_models_as_in_memory(cancer, tally_path, weighted):
+    X, y, X_new, w, model = cancer
+    sw = w if weighted else None
+    mem = _quiet(lambda: copy.deepcopy(model).adapt(X_new, sample_weight=sw))
+    dist, messages = _caught(lambda: copy.deepcopy(model).adapt(
+        da.from_array(X_new, chunks=(75, 30)),
+        sample_weight=None if sw is None else da.from_array(sw, chunks=75)))
+    assert not [m for m in messages if REFIT in m]
+    # the interval to 1e-6 (measured 3e-8: the spline between grid priors and the tally's bins
+    # behind the refit model's estimate); the shift test reads the sums at the source prior
+    np.testing.assert_allclose(dist.target_prior_interval_, mem.target_prior_interval_,
+                               rtol=0, atol=1e-6)
+    np.testing.assert_allclose(dist.target_prior_, mem.target_prior_, rtol=0, atol=1e-8)
+    assert dist.shift_statistic_ == pytest.approx(mem.shift_statistic_, rel=1e-9)
+    assert dist.adaptation_weight_ == pytest.approx(mem.adaptation_weight_, abs=1e-8)
+    # the fold models made the difference: the refit model's scores alone (the path before)
+    est = model.prior_estimator_
+    without = _quiet(lambda: est.estimate(model.estimator_.predict_proba(X_new), sw))
+    assert abs(without.shift_statistic - mem.shift_statistic_) > 0.3
+    assert np.max(np.abs(without.interval - mem.target_prior_interval_)) > 1e-3
+
+
+def test_grid_sums_give_the_rows_moments_at_any_prior(cancer):
+    # the unlabelled side of score_interval computed from the rows (fold posteriors rebuilt with
+    # scikit-learn, calibrated by the wrapper's map), against the grid sums interpolated at
+    # priors off the grid
+    X, y, X_new, w, model = cancer
+    est = model.prior_estimator_
+    fp = np.stack([est.calibrate(f) for f in _direct_fold_proba(X, y, X_new, 0)])
+    src = est.source_prior_
+    kept = est._source_rows()
+    share = fold_shares(est._src_fold, kept[1], kept[2], 3)[0]
+    sums = fold_score_block(fp[:, :150], share, src, w[:150], score_grid(src[1])) + \
+        fold_score_block(fp[:, 150:], share, src, w[150:], score_grid(src[1]))
+    t = np.array([0.0, 1e-12, 1e-4, 0.0371, 0.2, 0.5, 0.77, 0.9999, 1.0, src[1]])
+    q = fp / src
+    a, d = q[:, :, 0], q[:, :, 1] - q[:, :, 0]
+    u = np.einsum("k,knt->nt", share, d[:, :, None] / (a[:, :, None] + t * d[:, :, None]))
+    wn = w / w.sum()
+    mean = wn @ u
+    var = wn @ (u * u) - mean**2
+    got_mean, got_var = sums.moments(t)
+    np.testing.assert_allclose(got_mean, mean, rtol=1e-6, atol=1e-9)
+    np.testing.assert_allclose(got_var, var, rtol=1e-5, atol=1e-9)
+    # at the source prior (a grid point) the shift test's moments are the sums themselves
+    m_src, c_src = sums.test_moments(src)
+    assert m_src[0] == pytest.approx(mean[-1], rel=1e-12)
+    assert c_src[0, 0] == pytest.approx(var[-1], rel=1e-9)
