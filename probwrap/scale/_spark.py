@@ -15,6 +15,7 @@ column in frame order.
 from __future__ import annotations
 
 import pickle
+import warnings
 from typing import Any
 
 import numpy as np
@@ -103,16 +104,25 @@ class _Shipped:
 
 
 class _WorkerError:
-    """A ValueError raised on an executor (bad labels, weights or model output in a partition),
-    sent back to the driver as the partition's result: a failed Spark job would show the user a
-    Java stack trace around the message; the driver raises it as a ValueError, as in memory."""
+    """An error raised on an executor (bad labels, weights or model output in a partition, or
+    the model's own failure of any type), sent back to the driver as the partition's result: a
+    failed Spark job would show the user a Java stack trace around the message (PySpark's
+    ``PythonException``); the driver raises it as a ValueError, as in memory, naming the type
+    of an error that was not a ValueError (as ``add_predictions`` does)."""
 
     def __init__(self, message: str) -> None:
         self.message = message
 
 
-def _failure(exc: ValueError) -> bytes:
-    return pickle.dumps(_WorkerError(str(exc)))
+def _failure(exc: BaseException) -> bytes:
+    detail = str(exc).strip() or type(exc).__name__
+    if not isinstance(exc, ValueError):
+        detail = (f"on the Spark executors the model (or a step there) raised "
+                  f"{type(exc).__name__}: {detail}")
+        if isinstance(exc, ImportError):
+            detail += (" (the model's code must be importable on the executors: install its "
+                       "package there, or ship it with SparkContext.addPyFile)")
+    return pickle.dumps(_WorkerError(detail))
 
 
 def _loaded(blob: Any) -> Any:
@@ -237,6 +247,95 @@ def _text_columns(frame: Any, columns: list) -> list:
     return [c for c in columns if _type_name(frame, c) in ("string", "varchar", "char")]
 
 
+#: the value put into a text feature column of one row to learn whether the model reads that
+#: column as numbers (see :func:`_check_text_features`)
+_NOT_A_NUMBER = "probwrap: not a number"
+
+
+def _model_reads(estimator: Any, pdf: Any, columns: list, named: bool) -> BaseException | None:
+    """The error the model raises on the rows ``pdf`` (None when it reads them)."""
+    method = next((m for m in ("predict_proba", "decision_function", "predict")
+                   if hasattr(estimator, m)), None)
+    if method is None:
+        return None
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            getattr(estimator, method)(_features(pdf, columns, named))
+    except Exception as exc:  # noqa: BLE001 - any failure is the model's answer
+        return exc
+    return None
+
+
+def _check_text_features(estimator: Any, frame: Any, columns: list, named: bool) -> None:
+    """Refuse, on the driver, text (Spark string) feature columns the model cannot read.
+
+    A model converts a text column to numbers only when every value is one; a value such as
+    "n/a" otherwise fails inside the model on some executor, with a message that names no
+    column. Only when some feature column is text: the model scores one row of the frame on the
+    driver (a failure there is raised with the text columns named); then, per text column, the
+    same row with that column set to a word: a model that fails on it reads the column as
+    numbers (a model with its own encoder for the column does not), and one Spark aggregate
+    counts the column's values that are not numbers (Spark's cast to double gives null), which
+    are refused naming the column, the count and one of them. Checked once per frame, model and
+    columns.
+    """
+    text = _text_columns(frame, columns)
+    if not text:
+        return
+    key = (id(estimator), tuple(columns))
+    seen = getattr(frame, "_probwrap_text_checked", None)
+    if isinstance(seen, set) and key in seen:
+        return
+    probe = frame.select(*columns).limit(1).toPandas()
+    if len(probe) == 0:
+        return
+    listed = ", ".join(repr(c) for c in text[:5])
+    error = _model_reads(estimator, probe, columns, named)
+    if error is not None:
+        raise ValueError(
+            f"The model cannot score the first row of the Spark DataFrame "
+            f"({type(error).__name__}: {str(error).strip()}); its feature column(s) {listed} "
+            "are text (Spark strings): if the model expects numbers there, cast them first, "
+            f"for example F.col({text[0]!r}).cast('double')."
+        )
+    numeric = []
+    for c in text:
+        changed = probe.copy()
+        changed[c] = _NOT_A_NUMBER
+        if _model_reads(estimator, changed, columns, named) is not None:
+            numeric.append(c)
+    if numeric:
+        from pyspark.sql import functions as F
+
+        def not_number(c: str) -> Any:
+            # try_cast: null for a value that is not a number, also under ANSI mode (Spark 4's
+            # default, where cast raises)
+            quoted = "`" + c.replace("`", "``") + "`"
+            return F.col(c).isNotNull() & F.expr(f"try_cast({quoted} AS DOUBLE)").isNull()
+
+        counts = frame.select(*[F.sum(not_number(c).cast("long")).alias(c)
+                                for c in numeric]).first()
+        bad = [(c, int(counts[c] or 0)) for c in numeric if counts[c]]
+        if bad:
+            c, n_bad = bad[0]
+            example = frame.where(not_number(c)).select(c).first()[0]
+            others = ", ".join(f"{o!r} ({n})" for o, n in bad[1:5])
+            raise ValueError(
+                f"The feature column {c!r} of the Spark DataFrame is text (a Spark string) and "
+                f"the model reads it as numbers, but {n_bad} of its values are not numbers "
+                f"(for example {plain(example)!r})"
+                + (f"; so are values of the text column(s) {others}" if others else "")
+                + ". Clean those values, or turn the column into numbers first (for example "
+                f"frame.withColumn({c!r}, F.expr(\"try_cast(`{c}` AS DOUBLE)\")), which makes "
+                "them null)."
+            )
+    try:
+        frame._probwrap_text_checked = (seen if isinstance(seen, set) else set()) | {key}
+    except Exception:  # noqa: BLE001 - a frame that takes no attribute is checked again
+        pass
+
+
 def _feature_columns(estimator: Any, frame: Any, exclude: list) -> tuple[list, bool]:
     """Columns handed to ``estimator`` and whether they go as a pandas DataFrame (named)."""
     names = getattr(estimator, "feature_names_in_", None)
@@ -255,6 +354,7 @@ def _feature_columns(estimator: Any, frame: Any, exclude: list) -> tuple[list, b
                 "the estimator's features."
             )
         _check_feature_types(frame, names)
+        _check_text_features(estimator, frame, names, True)
         return names, True
     cols = [c for c in frame.columns if c not in exclude]
     n_in = getattr(estimator, "n_features_in_", None)
@@ -267,6 +367,7 @@ def _feature_columns(estimator: Any, frame: Any, exclude: list) -> tuple[list, b
     if not cols:
         raise ValueError("The Spark DataFrame has no feature columns besides the named ones.")
     _check_feature_types(frame, cols)
+    _check_text_features(estimator, frame, cols, False)
     return cols, False
 
 
@@ -317,7 +418,6 @@ def _tally_partitions(
 
             context = TaskContext.get()
             part = context.partitionId() if context is not None else 0
-            value = shared.value
             total = None
             held: list = []
             n_held = 0
@@ -335,6 +435,7 @@ def _tally_partitions(
                 )
 
             try:
+                value = shared.value  # (unpickling the model can fail here: an ImportError)
                 for pdf in batches:
                     if len(pdf) == 0:
                         continue
@@ -347,7 +448,7 @@ def _tally_partitions(
                 if held:
                     t = flush()
                     total = t if total is None else total.merge(t)
-            except ValueError as exc:  # raised on the driver (see _WorkerError)
+            except Exception as exc:  # noqa: BLE001 - raised on the driver (see _WorkerError)
                 yield pd.DataFrame({"partition": [part], "tally": [_failure(exc)],
                                     "dropped": [False]})
                 return
@@ -565,7 +666,7 @@ class SparkBlocks:
                             continue
                         r = fn(block, *args)
                         total = r if total is None else _combine(total, r)
-            except ValueError as exc:  # raised on the driver (see _WorkerError)
+            except Exception as exc:  # noqa: BLE001 - raised on the driver (see _WorkerError)
                 yield pd.DataFrame({"partition": [_partition_id()], "value": [_failure(exc)]})
                 return
             if total is not None:
@@ -625,13 +726,13 @@ class SparkRows:
         spec = self._split
 
         def map_partition(batches):
-            f, a = shared.value
             total = None
             try:
+                f, a = shared.value
                 for pdf in _chunks(batches, CHUNK_ROWS):
                     r = f(*a, *_split(*spec, pdf))
                     total = r if total is None else _combine(total, r)
-            except ValueError as exc:  # raised on the driver (see _WorkerError)
+            except Exception as exc:  # noqa: BLE001 - raised on the driver (see _WorkerError)
                 yield pd.DataFrame({"partition": [_partition_id()], "value": [_failure(exc)],
                                     "dropped": [False]})
                 return
@@ -659,11 +760,11 @@ class SparkRows:
         spec = self._split
 
         def make_blocks(batches):
-            f, a = shared.value
             try:
+                f, a = shared.value
                 for pdf in _chunks(batches, PERSIST_ROWS):
                     yield pd.DataFrame({"block": [pickle.dumps(f(*a, *_split(*spec, pdf)))]})
-            except ValueError as exc:  # kept as a block, raised on the driver by the reductions
+            except Exception as exc:  # noqa: BLE001 - kept as a block, raised on the driver
                 yield pd.DataFrame({"block": [_failure(exc)]})
 
         cached = self._frame.select(*self._columns).mapInPandas(make_blocks, "block binary")
@@ -757,13 +858,16 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         key = pdf[batch_col].iloc[0]
         try:
             return estimate(pdf, key)
-        except ValueError as exc:  # raised on the driver, as in memory
+        except Exception as exc:  # noqa: BLE001 - raised on the driver, as in memory
+            message = str(exc) if isinstance(exc, ValueError) else (
+                f"on the Spark executors the model (or a step there) raised "
+                f"{type(exc).__name__}: {exc}")
             return pd.DataFrame({
                 "batch": [key], "n_rows": [len(pdf)], "n_effective": [np.nan], "prior": [[]],
                 "lower": [[]],
                 "upper": [[]], "shift_statistic": [np.nan], "shift_pvalue": [np.nan],
                 "converged": [False], "class_shift_score": [[]], "weight_unit": [1.0],
-                "error": [str(exc)], "warning_category": [[]], "warning_message": [[]],
+                "error": [message], "warning_category": [[]], "warning_message": [[]],
             })
 
     def estimate(pdf, key):
