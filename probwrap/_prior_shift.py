@@ -499,6 +499,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self._warn_few_class_rows(ho.class_row_counts(ho.sample_weight))
         if sample_weight is not None and not ho.from_tally:
             self._warn_weight_reading(ho.sample_weight)
+        elif sample_weight is not None:
+            # more than 20,000 Dask or Spark rows, read from the bins of their tally
+            self._warn_tally_weight_reading(self.tally_, ho.sample_weight)
         est = PriorEstimator(
             self.method,
             calibration=self.calibration,
@@ -621,6 +624,82 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             "that test's choice and predict_proba, and through the calibrated probabilities "
             "adapt's estimate, shift test and interval",
         )
+
+    def _warn_tally_weight_reading(self, tally: Any, bin_weights: np.ndarray) -> None:
+        """:meth:`_warn_weight_reading` for labelled rows read from the bins of their tally
+        (more than 20,000 Dask or Spark rows), from what the tally knows of the rows' weights
+        (their sum, their rows of positive weight, Kish's size and ``weight_factor``).
+
+        There the calibration reads the weights of the tally's bins by the maps' rule: row
+        counts when they sum to at least the number of occupied (bin, class) cells, which holds
+        for every weight sum above about 8,000 whatever the rows. Weights read as counts in
+        memory too (they sum to at least the rows) are read alike, and warned about in the same
+        words when they do not look like counts. Weights that sum to less than the rows are
+        relative in memory (Kish's size, the same at every scale) but counts here: the reading
+        then moves with their scale, and the warning says so and gives the scale at which the
+        two agree (the weights summing to Kish's effective size). Where they sum to less than
+        the cells too, the cells' own Kish size is read (the same at every scale, but not the
+        rows'), which the warning says as well.
+        """
+        from ._weights import warn_count_summary
+
+        unit = float(getattr(tally, "weight_unit", 1.0))
+        total = float(tally.total_weight) * unit
+        by_label = getattr(tally, "weighted_rows_by_label", None)
+        n_rows = int(np.sum(by_label)) if by_label is not None else int(tally.n_rows)
+        kish = float(tally.effective_rows)
+        factor = getattr(tally, "weight_factor", None)
+        if not (n_rows and np.isfinite(total) and total > 0):
+            return
+        cells_w = np.asarray(bin_weights, dtype=float)
+        cells = int(np.count_nonzero(cells_w))
+        as_counts = float(cells_w.sum()) >= cells
+        owner = "PriorShiftWrapper.fit"
+        if total >= n_rows:
+            if factor is None:  # a tally that does not know: nothing to say
+                return
+            warn_count_summary(
+                n_rows, total, None if factor < 0 else factor, kish, owner,
+                "the calibration inside it (its test of whether predict_proba keeps the "
+                "model's own probabilities, its scale prior and output floor) counts",
+                "that test's choice and predict_proba, and through the calibrated "
+                "probabilities adapt's estimate, shift test and interval",
+                remedy=("If the weights are relative (survey, importance or scaled weights), "
+                        "pass them scaled to sum to their Kish's effective sample size "
+                        f"({kish:.6g}): they then count as that many rows, as in memory, "
+                        "whatever their scale (these more than 20,000 Dask or Spark rows "
+                        "are read from the bins of their tally)."),
+                stacklevel=4,
+            )
+            return
+        if np.isfinite(kish) and abs(total - kish) <= 1e-9 * kish and as_counts:
+            return  # on Kish's scale already: counted as Kish's size, as in memory
+        if as_counts:
+            message = (
+                f"{owner}: `sample_weight` sums to less than the number of rows ({total:.4g} "
+                f"for {n_rows} rows), so in memory the calibration inside it would read "
+                f"relative weights counted as Kish's effective sample size ({kish:.6g} rows), "
+                "the same at every scale; these more than 20,000 Dask or Spark rows are read "
+                f"from the {cells} cells of their tally, whose weights sum to at least the "
+                f"cells, so it counts {total:.4g} rows here, and multiplying every weight by a "
+                "constant changes its test of whether predict_proba keeps the model's own "
+                "probabilities, predict_proba, and adapt's estimate, shift test and interval. "
+                f"Pass the weights scaled to sum to {kish:.6g} (their Kish's size) to read "
+                "them as in memory."
+            )
+        else:
+            message = (
+                f"{owner}: `sample_weight` sums to less than the number of rows, so the "
+                "weights cannot be row frequencies; for the calibration inside it they are "
+                "rescaled to Kish's effective sample size of the "
+                f"{cells} cells of the tally these more than 20,000 Dask or Spark rows are "
+                f"read from (in memory: of the rows, {kish:.6g}), the same at every scale."
+                + (f" Pass the weights scaled to sum to {kish:.6g} to read them as in memory."
+                   if kish >= cells else "")
+            )
+        from .calibration import WeightScaleWarning
+
+        warnings.warn(message, WeightScaleWarning, stacklevel=4)
 
     def _warn_few_class_rows(self, counts: np.ndarray) -> None:
         """Warn, naming the class(es), when a class has fewer than ``MIN_CLASS_ROWS`` labelled

@@ -16,7 +16,7 @@ import numpy as np
 from ._validation import shared_factor
 from .calibration._base import WeightScaleWarning, count_weights
 
-__all__ = ["count_scale_weights", "shared_factor", "warn_count_reading"]
+__all__ = ["count_scale_weights", "shared_factor", "warn_count_reading", "warn_count_summary"]
 
 
 def count_scale_weights(w: np.ndarray, owner: str, what: str, *, stacklevel: int = 4) -> np.ndarray:
@@ -76,15 +76,31 @@ def warn_count_reading(
         return
     u = w[w > 0] / float(w.max())  # scaled first: the sum of squares cannot overflow
     kish = float(u.sum() ** 2 / (u @ u))
+    warn_count_summary(n_rows, total, factor, kish, owner, what, effect,
+                       stacklevel=stacklevel + 1)
+
+
+def warn_count_summary(
+    n_rows: int, total: float, factor: int | None, kish: float, owner: str, what: str,
+    effect: str, *, remedy: str | None = None, stacklevel: int = 4
+) -> None:
+    """:func:`warn_count_reading` from a summary of the weights (rows of positive weight, their
+    sum, their shared whole factor or None when some is not a whole number, Kish's effective
+    size), for weights that are not at hand (a tally of Dask or Spark rows); ``remedy``
+    replaces the last sentence (what to pass instead)."""
+    if not (n_rows and total >= n_rows and np.isfinite(total)) or factor == 1:
+        return
     if factor is None:
         why = "they are not all whole numbers, yet sum to at least the number of rows"
     else:
         why = f"every weight is a multiple of {factor}"
     warnings.warn(
         f"{owner}: `sample_weight` is read as row counts ({why}): {what} {total:.4g} rows, so "
-        f"multiplying every weight by a constant changes {effect}. If the weights are relative "
-        "(survey, importance or scaled weights), pass them divided by their sum: they then count "
-        f"as Kish's effective sample size ({kish:.4g} rows) whatever their scale.",
+        f"multiplying every weight by a constant changes {effect}. "
+        + (remedy if remedy is not None else
+           "If the weights are relative (survey, importance or scaled weights), pass them "
+           "divided by their sum: they then count as Kish's effective sample size "
+           f"({kish:.4g} rows) whatever their scale."),
         WeightScaleWarning,
         stacklevel=stacklevel,
     )

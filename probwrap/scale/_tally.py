@@ -199,6 +199,12 @@ class ScoreTally:
         Number of tallied rows of each label, whatever their weight (None if unknown).
     weighted_rows_by_label : ndarray of int64 of shape (n_labels,), default=None
         Number of tallied rows of each label with a positive weight (None if unknown).
+    weight_factor : int, default=None
+        What the rows' weights (as given, before ``weight_unit``) are as numbers: the largest
+        whole number dividing every positive weight (1 for unit weights), 0 when no weight is
+        positive, -1 when some positive weight is not a whole number (or beyond 2**53); None
+        if unknown. The wrappers read it to say when their reading of the weights moves with
+        their scale (``PriorShiftWrapper.fit``'s ``WeightScaleWarning``).
     weight_unit : float, default=1.0
         The rows' weights were divided by this power of two before they were tallied
         (``counts``, ``score_sums``, ``replicates`` and ``squared_weight`` are in its units): 1.0
@@ -235,6 +241,7 @@ class ScoreTally:
         weight_unit: float = 1.0,
         rows_by_label: np.ndarray | None = None,
         weighted_rows_by_label: np.ndarray | None = None,
+        weight_factor: int | None = None,
     ) -> None:
         self.bins = np.asarray(bins, dtype=np.int64)
         self.counts = np.asarray(counts, dtype=float)
@@ -268,6 +275,7 @@ class ScoreTally:
         self.weighted_rows_by_label = self._row_counts(
             weighted_rows_by_label, "weighted_rows_by_label"
         )
+        self.weight_factor = None if weight_factor is None else int(weight_factor)
 
     def _row_counts(self, values: Any, name: str) -> np.ndarray | None:
         if values is None:
@@ -282,6 +290,7 @@ class ScoreTally:
         state.setdefault("weight_unit", 1.0)
         state.setdefault("rows_by_label", None)
         state.setdefault("weighted_rows_by_label", None)
+        state.setdefault("weight_factor", None)
         self.__dict__.update(state)
 
     # -- summaries -------------------------------------------------------------------------
@@ -463,6 +472,7 @@ class ScoreTally:
             uniq, merged, sums, self.resolution, self.n_rows + other.n_rows, self.labelled,
             reps, sq, unit, _add_counts(self.rows_by_label, other.rows_by_label),
             _add_counts(self.weighted_rows_by_label, other.weighted_rows_by_label),
+            _merge_factor(self.weight_factor, other.weight_factor),
         )
         out.kept_rows = _merge_kept(self, other)
         return out
@@ -481,7 +491,7 @@ class ScoreTally:
         return ScoreTally(
             self.bins[keep], counts[keep], np.ldexp(self.score_sums, shift)[keep],
             self.resolution, self.n_rows, self.labelled, reps, sq, unit, self.rows_by_label,
-            self.weighted_rows_by_label,
+            self.weighted_rows_by_label, self.weight_factor,
         )
 
     __add__ = merge
@@ -492,6 +502,25 @@ class ScoreTally:
             f"ScoreTally({self.n_rows} rows, {self.n_bins} bins, {kind}, "
             f"resolution={plain(self.resolution)!r})"
         )
+
+
+def _merge_factor(a: int | None, b: int | None) -> int | None:
+    """The ``weight_factor`` of the rows of two tallies (see :class:`ScoreTally`)."""
+    if a is None or b is None:
+        return None
+    if a < 0 or b < 0:
+        return -1
+    return math.gcd(a, b)
+
+
+def weight_factor_of(w: np.ndarray) -> int:
+    """``ScoreTally.weight_factor`` of the weights ``w`` of a block's rows."""
+    from .._validation import shared_factor
+
+    factor = shared_factor(w)
+    if factor is not None:
+        return int(factor)
+    return -1 if np.any(np.asarray(w) > 0) else 0
 
 
 def _merge_kept(a: ScoreTally, b: ScoreTally) -> tuple | None:
@@ -552,6 +581,7 @@ def _tally_block(
             y is not None,
             np.empty((n_replicates, 0, cols_out)) if n_replicates else None,
             0.0, 1.0, np.zeros(cols_out, np.int64), np.zeros(cols_out, np.int64),
+            0 if sample_weight is not None else 1,
         )
         if outputs is not None:
             empty.kept_rows = (np.asarray(outputs, dtype=float), None, None)
@@ -584,6 +614,7 @@ def _tally_block(
         if w.ndim != 1 or w.shape[0] != n:
             raise ValueError(f"`sample_weight` has shape {w.shape} but the data have {n} rows.")
         check_block_weights(w)
+    factor = 1 if sample_weight is None else weight_factor_of(w)
     # weights far from 1 are tallied divided by a power of two (see ScoreTally.weight_unit)
     unit = 1.0 if sample_weight is None else weight_unit_of(w.max())
     if unit != 1.0:
@@ -628,7 +659,7 @@ def _tally_block(
         weighted = rows if w.min() > 0 else np.bincount(labels_of[w > 0], minlength=cols)
     out = ScoreTally(
         bins, counts[occupied], sums[occupied], resolution, n, y is not None, reps,
-        float(np.dot(w, w)), unit, rows, weighted,
+        float(np.dot(w, w)), unit, rows, weighted, factor,
     )
     if outputs is not None and n <= KEPT_ROWS:
         out.kept_rows = (
