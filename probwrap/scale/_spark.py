@@ -336,8 +336,11 @@ def _check_text_features(estimator: Any, frame: Any, columns: list, named: bool)
         pass
 
 
-def _feature_columns(estimator: Any, frame: Any, exclude: list) -> tuple[list, bool]:
-    """Columns handed to ``estimator`` and whether they go as a pandas DataFrame (named)."""
+def _feature_columns(estimator: Any, frame: Any, exclude: list, *,
+                     check_text: bool = True) -> tuple[list, bool]:
+    """Columns handed to ``estimator`` and whether they go as a pandas DataFrame (named);
+    ``check_text``: text feature columns checked on the driver (:func:`_check_text_features`;
+    not for the lazy ``add_predictions``)."""
     names = getattr(estimator, "feature_names_in_", None)
     if names is not None:
         names = [str(c) for c in names]
@@ -354,7 +357,8 @@ def _feature_columns(estimator: Any, frame: Any, exclude: list) -> tuple[list, b
                 "the estimator's features."
             )
         _check_feature_types(frame, names)
-        _check_text_features(estimator, frame, names, True)
+        if check_text:
+            _check_text_features(estimator, frame, names, True)
         return names, True
     cols = [c for c in frame.columns if c not in exclude]
     n_in = getattr(estimator, "n_features_in_", None)
@@ -367,7 +371,8 @@ def _feature_columns(estimator: Any, frame: Any, exclude: list) -> tuple[list, b
     if not cols:
         raise ValueError("The Spark DataFrame has no feature columns besides the named ones.")
     _check_feature_types(frame, cols)
-    _check_text_features(estimator, frame, cols, False)
+    if check_text:
+        _check_text_features(estimator, frame, cols, False)
     return cols, False
 
 
@@ -1029,8 +1034,11 @@ def add_predictions(model: Any, frame: Any, *, prefix: str = "") -> Any:
     adjusted = hasattr(model, "prior_estimator_") and hasattr(model, "source_prior_")
     actions = np.asarray(getattr(model, "actions_", classes))
     inner = getattr(model, "estimator_", model)
+    # (lazy: the text columns are not checked by a Spark job here; a batch that fails names
+    # them, see _scoring_message)
     features, named = _feature_columns(
-        model if getattr(model, "feature_names_in_", None) is not None else inner, frame, []
+        model if getattr(model, "feature_names_in_", None) is not None else inner, frame, [],
+        check_text=False,
     )
     def per_class(stem: str) -> list:
         # binary: one column (the probability of classes_[1]); multiclass: one per class
