@@ -12,6 +12,7 @@ Coverage on scikit-learn's and statsmodels' bundled data: benchmarks/shift.py --
 
 from __future__ import annotations
 
+import copy
 import pickle
 import warnings
 
@@ -369,18 +370,29 @@ def test_multiclass_non_em_refit_does_not_warn():
 
 def test_dask_unlabelled_rows_with_a_refit_model(cancer_split, tally_path):
     # unlabelled Dask rows beyond the kept-rows limit (lowered to 0 by `tally_path`) are tallied
-    # on the workers from the refit model's posteriors only: adapt warns. A small Dask set is
-    # collected as rows, which the fold models score too: the same interval as in memory.
+    # on the workers from the refit model's posteriors: since 4 December 2026 the score
+    # interval reads the fold models' score sums there (tests/test_distributed_refit_large.py),
+    # a bootstrap interval (replicates of the tally) does not, and adapt warns. A small Dask set
+    # is collected as rows, which the fold models score too: the same interval as in memory.
     da = pytest.importorskip("dask.array")
     import probwrap.scale._tally as tally_module
 
     X, y, X_new = cancer_split
     model = PriorShiftWrapper(_model(), cv=3, random_state=0)
+    boot = PriorShiftWrapper(_model(), cv=3, random_state=0, interval="percentile",
+                             n_resamples=50)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         model.fit(X, y)
+        boot.fit(X, y)
+        memory = copy.deepcopy(model).adapt(X_new).target_prior_interval_
     with pytest.warns(UserWarning, match="does not carry how much that refit moves"):
+        boot.adapt(da.from_array(X_new, chunks=100))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
         model.adapt(da.from_array(X_new, chunks=100))
+    assert not [w for w in caught if "refit" in str(w.message)]
+    np.testing.assert_allclose(model.target_prior_interval_, memory, atol=1e-6)
     frozen = PriorShiftWrapper(FrozenEstimator(model.estimator_), random_state=0)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
