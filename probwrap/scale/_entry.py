@@ -54,8 +54,9 @@ def heldout_from_dask(owner: Any, X: Any, y: Any, sample_weight: Any, response: 
 
 
 def unlabelled_proba_from_dask(estimator: Any, X: Any, sample_weight: Any = None, **kwargs):
-    """Posteriors of unlabelled Dask or Spark rows as tally rows, and (``folds``, a small set)
-    the fold models' posteriors of the same rows: ``(proba, weights, tally, fold posteriors)``."""
+    """Posteriors of unlabelled Dask or Spark rows as tally rows, and (``folds``) the fold
+    models' posteriors of the same rows (a small set) or, with ``moments_of``, the sums of their
+    fold-averaged score on a grid of priors (more rows): ``(proba, weights, tally, folds)``."""
     return _rows.unlabelled_proba_from_rows(estimator, X, sample_weight, **kwargs)
 
 
