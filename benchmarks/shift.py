@@ -126,8 +126,10 @@ seeds' draws (mean share closed; worst no-shift ratio).
    interval's standard deviation (95 % half-width / 1.96), its mean and spread across draws
    (a right-sized interval gives mean 0, spread 1), and coverage at 90 % and 95 %, with the
    unlabelled rows drawn by class from the other rows with replacement (as ``refitmany``) and
-   without; ``--seed=N`` draws from ``numpy.random.default_rng(12 + N)``; ``--reps=N`` (default
-   200; about 16 minutes under load, 40 minutes at a load of 20 on two cores).
+   without; ``--seed=N`` draws from ``numpy.random.default_rng(12 + N)``; ``--labelled=N``
+   labelled rows instead of 25,000; ``--reps=N`` (default 200; about 16 minutes under load,
+   40 minutes at a load of 20 on two cores). Also prints the mean of ``target_prior_`` and of
+   the interval's midpoint.
 """
 
 from __future__ import annotations
@@ -1699,7 +1701,8 @@ def many_rows_spread(reps: int, seed: int = 0, n_lab: int = 25_000) -> None:
         rec.append(row)
     a = np.asarray(rec)
     head = (f"{'unlabelled rows':>22} | {'cover90':>7} {'cover95':>7} | {'mean z':>6} "
-            f"{'sd z':>5} | {'sd of est.':>10} {'interval sd':>11}")
+            f"{'sd z':>5} | {'sd of est.':>10} {'interval sd':>11} | {'mean est.':>9} "
+            f"{'mean mid':>8}")
     print(head)
     print("-" * len(head))
     for label, o in (("drawn with replacement", 0), ("without replacement", 5)):
@@ -1708,7 +1711,8 @@ def many_rows_spread(reps: int, seed: int = 0, n_lab: int = 25_000) -> None:
         z = (est - share) / sd
         print(f"{label:>22} | {np.mean((lo90 <= share) & (share <= hi90)):7.1%} "
               f"{np.mean((lo95 <= share) & (share <= hi95)):7.1%} | {z.mean():+6.2f} "
-              f"{z.std():5.2f} | {est.std():10.4f} {sd.mean():11.4f}", flush=True)
+              f"{z.std():5.2f} | {est.std():10.4f} {sd.mean():11.4f} | {est.mean():9.4f} "
+              f"{np.mean((lo95 + hi95) / 2):8.4f}", flush=True)
     print(f"({time.perf_counter() - t0:.0f} s; binomial sd of a coverage over {reps} "
           f"repetitions: {np.sqrt(0.09 / reps):.1%} at 90 %, {np.sqrt(0.0475 / reps):.1%} at "
           f"95 %; standard error of sd z about {1 / np.sqrt(2 * reps):.2f})")
@@ -1774,7 +1778,7 @@ def main(quick: bool = False,
          seed: int = 0,
          parts: tuple[str, ...] = ("evidence", "coverage", "speed", "small", "multiclass", "tiny",
                                    "fewlabels", "refit"),
-         reps: int | None = None, grid_only: bool = False,
+         reps: int | None = None, grid_only: bool = False, labelled: int = 25_000,
          ) -> None:
     import os
 
@@ -1803,7 +1807,7 @@ def main(quick: bool = False,
     if "refitmany" in parts:  # more than 20,000 labelled rows (not in the default run)
         _refit_many_rows(int(reps) if reps else (10 if quick else 100))
     if "manyspread" in parts:  # is the default interval the right size there (not default)
-        many_rows_spread(int(reps) if reps else (10 if quick else 200), seed)
+        many_rows_spread(int(reps) if reps else (10 if quick else 200), seed, labelled)
     print(f"\n(total {time.perf_counter() - t0:.0f} s)")
 
 
@@ -1813,7 +1817,9 @@ if __name__ == "__main__":
         chosen = ("ceiling", *chosen)
     seeds = [int(a[len("--seed="):]) for a in sys.argv if a.startswith("--seed=")]
     reps_arg = [int(a[len("--reps="):]) for a in sys.argv if a.startswith("--reps=")]
+    lab_arg = [int(a[len("--labelled="):]) for a in sys.argv if a.startswith("--labelled=")]
     main(quick="--quick" in sys.argv, seed=seeds[0] if seeds else 0,
          parts=chosen or ("evidence", "coverage", "speed", "small", "multiclass", "tiny",
                           "fewlabels", "refit"),
-         reps=reps_arg[0] if reps_arg else None, grid_only="--grid-only" in sys.argv)
+         reps=reps_arg[0] if reps_arg else None, grid_only="--grid-only" in sys.argv,
+         labelled=lab_arg[0] if lab_arg else 25_000)
