@@ -151,3 +151,25 @@ def test_monitor_on_spark_reads_the_fold_models_as_in_memory(spark, cancer):
     mem = _quiet(lambda: model.monitor(X_new.iloc[order], batches=batch[order]))
     for name in ("prior", "lower", "upper", "shift_statistic", "shift_pvalue"):
         np.testing.assert_allclose(dist[name], mem[name], rtol=0, atol=1e-9)
+
+
+def test_add_predictions_probability_is_what_predict_proba_gives_with_fold_models(spark, cancer):
+    # a wrapper whose fold models predict (predict_with="fold_models"): add_predictions'
+    # "probability" column is the wrapper's own predict_proba before adapt (the fold models'
+    # calibrated posteriors averaged), and "adjusted_probability" its output after adapt; the
+    # column used to be the refit model's calibrated posterior, which differs from both
+    from probwrap.scale import add_predictions
+
+    X, y, X_new, _ = cancer
+    wrapper = _quiet(lambda: PriorShiftWrapper(_model(), cv=3, random_state=0,
+                                               predict_with="fold_models").fit(X, y))
+    before = wrapper.predict_proba(X_new)[:, 1]
+    refit_only = wrapper.prior_estimator_.calibrate_output(
+        wrapper.estimator_.predict_proba(X_new))[:, 1]
+    assert np.max(np.abs(before - refit_only)) > 1e-4  # the two readings differ here
+    _quiet(lambda: wrapper.adapt(X_new))
+    frame = spark.createDataFrame(X_new.assign(row=np.arange(X_new.shape[0]))).coalesce(1)
+    got = add_predictions(wrapper, frame).toPandas().sort_values("row")
+    np.testing.assert_allclose(got["probability"], before, rtol=1e-12)
+    np.testing.assert_allclose(got["adjusted_probability"], wrapper.predict_proba(X_new)[:, 1],
+                               rtol=1e-12)

@@ -1087,8 +1087,9 @@ def add_predictions(model: Any, frame: Any, *, prefix: str = "") -> Any:
             X = X[features]
         out = {}
         if adjusted:
-            raw = np.asarray(fitted.estimator_.predict_proba(X), dtype=float)
-            put(out, "probability", np.asarray(fitted.prior_estimator_.calibrate_output(raw)))
+            # the calibrated posteriors at the source prior, as predict_proba gives them before
+            # adapt (of the refit model, or averaged over the fold models that predict)
+            put(out, "probability", np.asarray(fitted._calibrated(X), dtype=float))
             put(out, "adjusted_probability", np.asarray(fitted.predict_proba(X), dtype=float))
         else:
             put(out, "probability", np.asarray(fitted.predict_proba(X), dtype=float))
