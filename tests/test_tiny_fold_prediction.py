@@ -146,9 +146,11 @@ def _log_loss(p: np.ndarray, y: np.ndarray) -> float:
 
 def test_unstable_scale_fold_models_predict_prior_shift():
     """scikit-learn's wine (class 0 against the rest), SGD with log loss, 30 labelled rows:
-    the fold models' spreads vary (sd of logs 0.115), so ``auto`` predicts with them; test log
-    loss before ``adapt`` 0.466 with the refit, 0.227 with the fold models, against
-    scikit-learn's CalibratedClassifierCV(method="sigmoid") 0.330 on the same rows."""
+    test log loss before ``adapt`` with the fold models predicting 0.227, with the refit 0.466,
+    against scikit-learn's CalibratedClassifierCV(method="sigmoid") 0.330 on the same rows
+    (scikit-learn 1.9; with 1.6: 0.158, 0.322 and 0.331). Under 1.9 the fold models' spreads
+    vary (sd of logs 0.115), so ``auto`` predicts with them; scikit-learn 1.6's SGD gives
+    steadier fold models here (0.005), and ``auto`` keeps the refit, as its rule says."""
     from sklearn.calibration import CalibratedClassifierCV
     from sklearn.datasets import load_wine
 
@@ -157,12 +159,18 @@ def test_unstable_scale_fold_models_predict_prior_shift():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         auto = PriorShiftWrapper(_sgd(), random_state=0, n_resamples=0).fit(X, y)
+        folds = PriorShiftWrapper(_sgd(), random_state=0, n_resamples=0,
+                                  predict_with="fold_models").fit(X, y)
         refit = PriorShiftWrapper(_sgd(), random_state=0, n_resamples=0,
                                   predict_with="refit").fit(X, y)
         sk = CalibratedClassifierCV(_sgd(), method="sigmoid", cv=5).fit(X, y)
-    assert auto.predicted_with_ == "fold_models" and refit.predicted_with_ == "refit"
-    assert auto.fold_spread_variation_ > 0.10
-    ours = _log_loss(auto.predict_proba(X_test), y_test)
+    assert folds.predicted_with_ == "fold_models" and refit.predicted_with_ == "refit"
+    unsteady = auto.fold_spread_variation_ > 0.10
+    assert auto.predicted_with_ == ("fold_models" if unsteady else "refit")
+    same = folds if unsteady else refit
+    np.testing.assert_allclose(auto.predict_proba(X_test), same.predict_proba(X_test),
+                               rtol=0, atol=1e-12)
+    ours = _log_loss(folds.predict_proba(X_test), y_test)
     assert ours < 0.75 * _log_loss(refit.predict_proba(X_test), y_test)
     assert ours < _log_loss(sk.predict_proba(X_test), y_test)
 
