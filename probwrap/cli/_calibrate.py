@@ -125,8 +125,9 @@ def file_copies(frame: Any, used: list[str]) -> np.ndarray | None:
     score, label or weight columns ``used``) as the features: rows identical in every column,
     one of whose values in another column occurs in no row outside them, in a column with at
     least a quarter as many distinct values as there are distinct rows (an id, a measurement
-    with many digits). The score and label alone cannot tell copies from ties (a tree gives
-    many rows one score), so a file without such a column is never read as holding copies.
+    with many digits) whose repeats chance does not explain. The score and label alone cannot
+    tell copies from ties (a tree gives many rows one score), so a file without such a column
+    is never read as holding copies.
     """
     pd = require("pandas")
     other = [c for c in frame.columns if c not in set(used)]
@@ -139,18 +140,9 @@ def file_copies(frame: Any, used: list[str]) -> np.ndarray | None:
     n_distinct = int(cells.max()) + 1
     if n_distinct == n:
         return None
-    size = np.bincount(cells)[cells]
-    exclusive = np.zeros(n, dtype=bool)
-    for column in other:
-        codes = pd.factorize(frame[column], use_na_sentinel=False)[0]
-        counts = np.bincount(codes)
-        if 4 * counts.shape[0] >= n_distinct:
-            exclusive |= counts[codes] == size
-    copies = (size >= 2) & exclusive
-    if not copies.any():
-        return None
-    out = np.where(copies, cells, n_distinct + np.arange(n))
-    return np.unique(out, return_inverse=True)[1].ravel().astype(np.intp)
+    from probwrap._heldout import copied_row_cells
+
+    return copied_row_cells(frame[other], cells, min_columns=1)
 
 
 # -- verbs ---------------------------------------------------------------------------------------
