@@ -86,6 +86,7 @@ def _summary_interval(summary: dict, matrix, share, policy: Any) -> Any:
     from sklearn.utils import check_random_state
 
     from .decision import CutoffInterval
+    from .scale._bootstrap import tally_exact_interval
 
     tally = summary["weighted"]
     counts, row_counts = tally.counts, summary["rows"]
@@ -105,6 +106,11 @@ def _summary_interval(summary: dict, matrix, share, policy: Any) -> Any:
     found = found[np.isfinite(found)]
     alpha = (1.0 - float(policy.confidence_level)) / 2.0
     low, high = (float(v) for v in np.quantile(found, [alpha, 1.0 - alpha]))
+    # the exact range of few rows of equal weight, from the rows behind each (bin, label)
+    exact_low, exact_high = tally_exact_interval(
+        tally, p, label, counts[bin_idx, label], matrix, share, policy.confidence_level,
+        low, high, rows=row_counts[bin_idx, label], stacklevel=3,
+    )
     folds = summary["folds"]
     return CutoffInterval(
         low=low,
@@ -114,4 +120,6 @@ def _summary_interval(summary: dict, matrix, share, policy: Any) -> Any:
         fold_cutoffs=folds,
         fold_low=float(folds.min()) if folds.size else low,
         fold_high=float(folds.max()) if folds.size else high,
+        exact_low=exact_low,
+        exact_high=exact_high,
     )

@@ -121,6 +121,7 @@ def cutoff_summary(
     (0.25, 0.25, [0.1, 0.4])
     """
     from probwrap.decision import binary_cost_matrix, cutoff_interval, plugin_cutoff, search_cutoff
+    from probwrap.decision._cutoff_interval import exact_cutoff_range
 
     matrix = binary_cost_matrix(costs)
     bounds = (0.0, 1.0) if scale == "proba" else None
@@ -150,6 +151,12 @@ def cutoff_summary(
             scores, y, matrix, capacity=capacity, score_bounds=bounds, n_resamples=n_resamples,
             confidence_level=confidence_level, random_state=seed, sample_weight=sample_weight,
         )
+    # below 100 rows of equal weight, the cutoffs no one-sided exact binomial test sets apart
+    # (CutoffInterval.exact_low / exact_high; needs no resampling, so with --resamples 0 too)
+    exact_low, exact_high, exact_note = exact_cutoff_range(
+        scores, y, matrix, sample_weight=sample_weight, capacity=capacity, score_bounds=bounds,
+        confidence_level=confidence_level,
+    )
     flagged = mean(scores > res.cutoff)
     realised = matrix[y, 1]
     out: dict[str, Any] = {
@@ -164,6 +171,10 @@ def cutoff_summary(
         # True when the bootstrap percentiles fell inside the same-cost range and the interval
         # was widened to contain it
         "cutoff_interval_widened": None if ci is None else bool(ci.widened_to_ties),
+        "cutoff_exact_range": (None if exact_note is not None
+                               else [float(exact_low), float(exact_high)]),
+        # why there is no exact range (None when there is one)
+        "cutoff_exact_range_note": exact_note,
         "confidence_level": float(confidence_level),
         "n_resamples": int(n_resamples),
         "expected_cost": float(res.cost) * unit,
@@ -285,6 +296,20 @@ def _same_cost_text(out: dict[str, Any], lo_t: str, hi_t: str) -> str:
     return f"[{lo_t}, {hi_t}" + ("]" if out["score_scale"] == "proba" and high >= 1.0 else ")")
 
 
+def _exact_lines(out: dict[str, Any], level: int) -> list[str]:
+    """The exact-test range below 100 rows, or why there is none (nothing from 100 rows on,
+    where the bootstrap interval is the one to read)."""
+    exact, note = out.get("cutoff_exact_range"), out.get("cutoff_exact_range_note")
+    if exact is not None:
+        lo_t, hi_t = cutoff_texts(exact)
+        return [f"  exact-test range      [{lo_t}, {hi_t}]   (no one-sided exact binomial test "
+                f"at {100 - level}% shows one of these cutoffs dearer than another; fewer than "
+                "100 rows)"]
+    if note is None or note.startswith("not computed: 100 or more"):
+        return []
+    return [f"  exact-test range      {note}"]
+
+
 def _text(out: dict[str, Any], path: str) -> str:
     level = round(100 * out["confidence_level"])
     # the cutoff and the ends of its same-cost range with enough digits to be told apart
@@ -303,6 +328,7 @@ def _text(out: dict[str, Any], path: str) -> str:
         f"{out['n_resamples']} resamples"
         + ("; widened to the same-cost range)" if out.get("cutoff_interval_widened") else ")")
         if out["cutoff_interval"] is not None else "  interval              not computed (--resamples 0)",
+        *_exact_lines(out, level),
         f"  expected cost per row {out['expected_cost']:.6g}",
         f"  share flagged         {out['flagged_share']:.4g}",
         f"  acting on no row      {out['cost_flag_none']:.6g}",

@@ -56,7 +56,10 @@ class CutoffInterval:
         ``groups``): the range of cutoffs that no exact binomial test shows dearer than another
         cutoff (see :func:`cutoff_interval`), which covered the population's least-cost cutoff
         in 97.5-100 % of draws of 20 and 50 rows where ``(low, high)`` covered it in 68-95 %,
-        at 1.5-1.9 times the width. NaN otherwise.
+        at 1.5-1.9 times the width. NaN otherwise. Intervals drawn from a tally (Dask or
+        Spark fits through their tallies, ``probwrap.scale._bootstrap.tally_cutoff_interval``)
+        compute it from the tally's rows per bin when the tally shows equal weights, NaN
+        otherwise; the command line's ``cutoff`` verb reports it as ``cutoff_exact_range``.
     """
 
     low: float
@@ -74,7 +77,8 @@ class CutoffInterval:
 
 
 def _exact_range(rows: _SortedRows, y_sorted: np.ndarray, matrix: np.ndarray,
-                 level: float, tie_low: float, tie_high: float) -> tuple[float, float]:
+                 level: float, tie_low: float, tie_high: float,
+                 counts_sorted: np.ndarray | None = None) -> tuple[float, float]:
     """Cutoffs that no one-sided exact binomial test at ``1 - level`` shows dearer than another.
 
     Decisions ``j < k`` differ only on the rows scoring between them: ``j`` takes the positive
@@ -85,6 +89,10 @@ def _exact_range(rows: _SortedRows, y_sorted: np.ndarray, matrix: np.ndarray,
     positive share there is ``even = fp_extra / (fp_extra + fn_extra)``. ``j`` is dropped when
     the binomial tail of ``c`` under ``even`` (lower for ``j < k``, upper for ``j > k``) is below
     ``1 - level`` for some ``k``; the range spans the kept decisions and the rows' tied range.
+
+    ``y_sorted`` holds, in score order, each entry's positives and ``counts_sorted`` its rows
+    (None: one row per entry, ``y_sorted`` its 0/1 label); entries are rows, or the
+    (bin, label) cells of a tally whose weights count rows.
     """
     from scipy.stats import binom
 
@@ -94,7 +102,10 @@ def _exact_range(rows: _SortedRows, y_sorted: np.ndarray, matrix: np.ndarray,
         return tie_low, tie_high
     even = fp_extra / (fp_extra + fn_extra)
     pos = np.concatenate([[0.0], np.cumsum(y_sorted)[rows.ends]])
-    cnt = np.concatenate([[0.0], (rows.ends + 1).astype(float)])
+    if counts_sorted is None:
+        cnt = np.concatenate([[0.0], (rows.ends + 1).astype(float)])
+    else:  # whole numbers summed: exact in floating point
+        cnt = np.concatenate([[0.0], np.cumsum(counts_sorted)[rows.ends]])
     between = cnt[None, :] - cnt[:, None]  # rows between decision j (row) and k (column)
     hits = pos[None, :] - pos[:, None]
     up = np.where(between > 0, binom.cdf(hits, np.maximum(between, 1), even), 1.0)
@@ -104,6 +115,164 @@ def _exact_range(rows: _SortedRows, y_sorted: np.ndarray, matrix: np.ndarray,
         return tie_low, tie_high
     return (min(float(rows.lower[kept.min()]), tie_low),
             max(float(rows.upper[kept.max()]), tie_high))
+
+
+#: Why ``exact_low`` / ``exact_high`` are NaN, by the first condition that fails (the command
+#: line's ``cutoff_exact_range_note`` and the tally paths' docs quote these).
+EXACT_RANGE_NOTES = {
+    "rows": f"not computed: {FEW_INTERVAL_ROWS} or more (effective) rows, where the bootstrap "
+            "interval covers as it says",
+    "capacity": "not computed: a capacity limit (the exact tests compare cutoffs by cost alone)",
+    "costs": "not computed: costs that differ from row to row (the tests need one cost matrix)",
+    "groups": "not computed: grouped rows (the tests count rows, not groups)",
+    "weights": "not computed: unequal row weights (the tests count rows; weights are not counts "
+               "of rows there)",
+    "tally": "not computed: the tally's bins do not show equal row weights",
+}
+
+
+def exact_range_note(n_effective: float, *, capacity: Any = None, per_row_costs: bool = False,
+                     groups: bool = False, equal_weights: bool = True) -> str | None:
+    """Why a cutoff interval has no exact range (the first reason), or None when it has one.
+
+    Examples
+    --------
+    >>> from probwrap.decision._cutoff_interval import exact_range_note
+    >>> exact_range_note(40.0) is None, exact_range_note(400.0)[:25]
+    (True, 'not computed: 100 or more')
+    """
+    if not n_effective < FEW_INTERVAL_ROWS:
+        return EXACT_RANGE_NOTES["rows"]
+    if capacity is not None:
+        return EXACT_RANGE_NOTES["capacity"]
+    if per_row_costs:
+        return EXACT_RANGE_NOTES["costs"]
+    if groups:
+        return EXACT_RANGE_NOTES["groups"]
+    if not equal_weights:
+        return EXACT_RANGE_NOTES["weights"]
+    return None
+
+
+def exact_cutoff_range(
+    scores: Any,
+    y: Any,
+    costs: Any,
+    *,
+    sample_weight: Any = None,
+    capacity: float | None = None,
+    score_bounds: tuple[float, float] | None = None,
+    confidence_level: float = 0.95,
+) -> tuple[float, float, str | None]:
+    """``exact_low``, ``exact_high`` of :func:`cutoff_interval` without its bootstrap.
+
+    The range needs no resampling, so the command line reports it with ``--resamples 0`` too.
+    Returns ``(exact_low, exact_high, note)``: NaN and the reason (:data:`EXACT_RANGE_NOTES`)
+    where :func:`cutoff_interval` leaves them NaN, ``note`` None otherwise.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.decision._cutoff_interval import exact_cutoff_range
+    >>> p = np.linspace(0.05, 0.95, 30)
+    >>> y = (p > 0.5).astype(int)
+    >>> lo, hi, note = exact_cutoff_range(p, y, {"fp": 1.0, "fn": 1.0}, score_bounds=(0, 1))
+    >>> bool(lo < 0.5 < hi), note
+    (True, None)
+    """
+    s, yi, w, matrix, _ = _prepare(scores, y, costs, sample_weight)
+    cap = check_capacity(capacity)
+    bounds = _check_bounds(score_bounds)
+    if not 0.0 < float(confidence_level) < 1.0:
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {plain(confidence_level)!r}.")
+    w1 = np.ones(s.shape[0]) if w is None else w
+    present = np.flatnonzero(w1 > 0)
+    wp = w1[present]
+    effective = float(wp.sum() ** 2 / np.dot(wp, wp)) if present.size else 0.0
+    note = exact_range_note(effective, capacity=cap, per_row_costs=matrix.ndim != 2,
+                            equal_weights=bool(np.ptp(wp) == 0.0) if present.size else True)
+    if note is not None or present.size == 0:
+        return float("nan"), float("nan"), note
+    rows = _SortedRows(s[present], bounds)
+    rc = _RowCosts(matrix, yi[present], None)
+    tie_low, tie_high = (float(v) for v in _search_rows(s[present], rc, None, bounds).interval)
+    lo, hi = _exact_range(rows, yi[present][rows.order].astype(float), matrix,
+                          float(confidence_level), tie_low, tie_high)
+    return lo, hi, None
+
+
+def tally_exact_range(p: np.ndarray, y: np.ndarray, weights: np.ndarray, rows: np.ndarray | None,
+                      matrix: np.ndarray, capacity: float | None, level: float
+                      ) -> tuple[float, float, str | None]:
+    """The exact range from tallied rows: one entry per (bin, label) with probability ``p``.
+
+    ``weights`` are the entries' tallied weights; ``rows`` their numbers of rows of positive
+    weight (None: unknown, and no range). With equal row weights (``weights / rows`` the same everywhere) the entries count rows, and the range is
+    that of :func:`cutoff_interval` on rows scored at their bins' representative
+    probabilities: equal to it on the rows themselves when no bin holds two distinct scores.
+    Returns ``(exact_low, exact_high, note)`` as :func:`exact_cutoff_range` does.
+    """
+    if rows is None:
+        return float("nan"), float("nan"), EXACT_RANGE_NOTES["tally"]
+    rows = np.asarray(rows, dtype=float)
+    keep = rows > 0
+    ratio = weights[keep] / rows[keep]
+    equal = bool(ratio.size and np.allclose(ratio, ratio[0], rtol=1e-9, atol=0.0))
+    n = float(rows.sum())
+    note = exact_range_note(n, capacity=capacity, per_row_costs=matrix.ndim != 2,
+                            equal_weights=equal)
+    if note is not None:
+        return float("nan"), float("nan"), note
+    s, yk, rk = p[keep], y[keep], rows[keep]
+    bounds = (0.0, 1.0)
+    sorted_rows = _SortedRows(s, bounds)
+    rc = _RowCosts(matrix, yk, rk)
+    tie_low, tie_high = (float(v) for v in _search_rows(s, rc, None, bounds).interval)
+    o = sorted_rows.order
+    lo, hi = _exact_range(sorted_rows, (yk * rk)[o].astype(float), matrix, float(level),
+                          tie_low, tie_high, counts_sorted=rk[o])
+    return lo, hi, None
+
+
+def tally_row_counts(tally: Any, weights: np.ndarray) -> np.ndarray | None:
+    """Rows behind each (bin, label) weight of ``tally.to_rows()``, when the tally shows that
+    every row of positive weight weighed the same; None otherwise (or when it cannot tell).
+
+    Equal weights are read from the tally's totals: Kish's effective number of rows
+    ``(sum w)^2 / sum w^2`` equals the number of rows of positive weight exactly when the
+    weights are equal; each cell then holds its weight divided by that common weight.
+    """
+    n = getattr(tally, "weighted_rows_by_label", None)
+    if n is None or tally.squared_weight is None or tally.squared_weight <= 0:
+        return None
+    n_rows = float(np.sum(n))
+    if n_rows < 1 or not np.isclose(tally.effective_rows, n_rows, rtol=1e-9, atol=0.0):
+        return None
+    rows = np.asarray(weights, dtype=float) / (tally.total_weight / n_rows)
+    whole = np.round(rows)
+    if not np.allclose(rows, whole, rtol=0.0, atol=1e-6) or whole.sum() != n_rows:
+        return None
+    return whole
+
+
+def warn_few_interval_rows(effective: float, units: str, low: float, high: float,
+                           widened: bool, exact_low: float, exact_high: float, *,
+                           stacklevel: int = 3) -> None:
+    """The :class:`CutoffIntervalCoverageWarning` of an interval on fewer than
+    :data:`FEW_INTERVAL_ROWS` effective rows (quoting the exact range where there is one)."""
+    warnings.warn(
+        f"the cutoff interval rests on {effective:.3g} {units}, fewer than "
+        f"{FEW_INTERVAL_ROWS}: on 20-50 rows of real data, 95 % bootstrap intervals covered "
+        f"the population's least-cost cutoff in only 69-94 % of draws "
+        f"(benchmarks/cutoff_interval_small.py); read [{low:.4g}, {high:.4g}] as the "
+        f"least the uncertainty could be"
+        + (", already widened to the range of cutoffs that cost the same on these rows"
+           if widened else "")
+        + (f"; no exact binomial test sets apart the cutoffs in [{exact_low:.4g}, "
+           f"{exact_high:.4g}] (exact_low, exact_high), a range that covered it in "
+           f"97.5-100 % of draws of 20-50 rows" if np.isfinite(exact_low) else ""),
+        CutoffIntervalCoverageWarning, stacklevel=stacklevel + 1,
+    )
 
 
 def cutoff_interval(
@@ -253,27 +422,18 @@ def cutoff_interval(
                                                        minlength=n_units)
     effective = float(sizes.sum() ** 2 / np.dot(sizes, sizes))
     exact_low = exact_high = float("nan")
-    if (effective < FEW_INTERVAL_ROWS and matrix.ndim == 2 and cap is None and groups is None
-            and np.ptp(wp) == 0.0):  # equal weights: the rows count as rows
+    if exact_range_note(effective, capacity=cap, per_row_costs=matrix.ndim != 2,
+                        groups=groups is not None,
+                        equal_weights=bool(np.ptp(wp) == 0.0)) is None:
+        # equal weights: the rows count as rows
         exact_low, exact_high = _exact_range(
             rows, yi[present][rows.order].astype(float), matrix, float(confidence_level),
             tie_low, tie_high)
     if effective < FEW_INTERVAL_ROWS:
         units = ("(effective) rows" if unit_of_row is None else
                  f"(effective) groups, the units it resamples ({n} rows in {n_units} groups)")
-        warnings.warn(
-            f"the cutoff interval rests on {effective:.3g} {units}, fewer than "
-            f"{FEW_INTERVAL_ROWS}: on 20-50 rows of real data, 95 % bootstrap intervals covered "
-            f"the population's least-cost cutoff in only 69-94 % of draws "
-            f"(benchmarks/cutoff_interval_small.py); read [{low:.4g}, {high:.4g}] as the "
-            f"least the uncertainty could be"
-            + (", already widened to the range of cutoffs that cost the same on these rows"
-               if widened else "")
-            + (f"; no exact binomial test sets apart the cutoffs in [{exact_low:.4g}, "
-               f"{exact_high:.4g}] (exact_low, exact_high), a range that covered it in "
-               f"97.5-100 % of draws of 20-50 rows" if np.isfinite(exact_low) else ""),
-            CutoffIntervalCoverageWarning, stacklevel=2,
-        )
+        warn_few_interval_rows(effective, units, low, high, widened, exact_low, exact_high,
+                               stacklevel=2)
 
     fold_cutoffs = []
     if fold is not None:

@@ -418,7 +418,10 @@ def collect_content(
             content.cutoff_source = POLICY_SOURCES.get(policy.strategy, POLICY_SOURCES["tuned"])
             if policy.cost_curve_ is not None:
                 content.cost_curve = policy.cost_curve_
-                content.cost_interval = policy.cutoff_interval_
+                # read through the notes: below 100 rows its coverage warning (quoting the
+                # exact range) is a note beside the number, as for the interval computed here
+                content.cost_interval = notes.compute("cutoff", "cutoff interval", getattr,
+                                                      policy, "cutoff_interval_")
                 ci = content.cost_interval  # None for a guaranteed cutoff (no bootstrap)
                 if ci is not None:
                     # the interval is that of the least-cost cutoff on the policy's held-out

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from typing import Any
 
+import numpy as np
+
 from .. import __version__
 from .._validation import cutoff_text
 from ..plot import (
@@ -109,6 +111,25 @@ def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
     return "".join(parts)
 
 
+def _exact_range_words(c: ReportContent) -> str:
+    """Below 100 rows of equal weight: the cutoffs no one-sided exact binomial test sets apart
+    (``CutoffInterval.exact_low`` / ``exact_high``), beside the bootstrap interval that covers
+    less often than it says there; "" where the interval has no such range."""
+    ci = c.cost_interval
+    low = getattr(ci, "exact_low", float("nan"))
+    high = getattr(ci, "exact_high", float("nan"))
+    if not (np.isfinite(low) and np.isfinite(high)):
+        return ""
+    alpha = 100 * (1 - c.confidence_level)
+    return (
+        f" On so few rows that interval covers the least-cost cutoff less often than it says; "
+        f"no one-sided exact binomial test at {alpha:.3g}&nbsp;% shows any of the cutoffs from "
+        f'<span id="cutoff-exact-range" data-low="{low!r}" data-high="{high!r}">'
+        f"{_cut(low)} to {_cut(high)}</span> dearer than another (a range that covered it in "
+        "97.5&ndash;100&nbsp;% of draws of 20&ndash;50 rows)."
+    )
+
+
 def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
     parts = ['<section id="decisions"><h2><span class="pw-num">2</span>Decisions</h2>']
     if c.cost_matrix is None:
@@ -155,6 +176,7 @@ def _decision_section(c: ReportContent, figures: dict[str, str]) -> str:
                     f"{BAYES_NAME} only as far as the held-out rows show a cost saving, and can "
                     "lie outside it."
                 )
+            parts.append(_exact_range_words(c))
         if c.plugin is not None:
             parts.append(
                 f" With calibrated probabilities the {BAYES_NAME} "

@@ -43,7 +43,10 @@ def tally_cutoff_interval(
     Returns
     -------
     probwrap.decision.CutoffInterval
-        ``fold_cutoffs`` is empty (the rows of a tally have no folds).
+        ``fold_cutoffs`` is empty (the rows of a tally have no folds). Below 100 effective
+        rows it warns as :func:`~probwrap.decision.cutoff_interval` does, and when the tally
+        shows equal row weights (no ``capacity``) ``exact_low`` / ``exact_high`` are computed
+        from its rows per bin (NaN otherwise); ``tie_low`` / ``tie_high`` are NaN.
 
     Examples
     --------
@@ -78,6 +81,9 @@ def tally_cutoff_interval(
     found = found[np.isfinite(found)]
     alpha = (1.0 - float(confidence_level)) / 2.0
     low, high = (float(v) for v in np.quantile(found, [alpha, 1.0 - alpha]))
+    exact_low, exact_high = tally_exact_interval(
+        tally, p, y, tally.to_rows()[2], costs, capacity, confidence_level, low, high
+    )
     return CutoffInterval(
         low=low,
         high=high,
@@ -86,7 +92,48 @@ def tally_cutoff_interval(
         fold_cutoffs=np.empty(0),
         fold_low=low,
         fold_high=high,
+        exact_low=exact_low,
+        exact_high=exact_high,
     )
+
+
+def tally_exact_interval(tally: ScoreTally, p: np.ndarray, y: np.ndarray, weights: np.ndarray,
+                         costs: Any, capacity: float | None, confidence_level: float,
+                         low: float, high: float, rows: np.ndarray | None = None,
+                         *, stacklevel: int = 2) -> tuple[float, float]:
+    """``exact_low``, ``exact_high`` of a cutoff interval drawn from a tally, and its warning.
+
+    ``p``, ``y``, ``weights``: the tally's rows (one per (bin, label)) at probability ``p``;
+    ``rows``: the rows behind each (None: read from the tally when its totals show equal
+    weights, :func:`~probwrap.decision._cutoff_interval.tally_row_counts`). Below
+    ``FEW_INTERVAL_ROWS`` effective rows a ``CutoffIntervalCoverageWarning`` says what
+    :func:`probwrap.decision.cutoff_interval` says on rows, quoting the exact range, which is
+    computed as there from the rows' counts per bin (equal weights, one cost matrix, no
+    capacity); NaN where it is not.
+    """
+    from ..decision._cutoff import _prepare
+    from ..decision._cutoff_interval import (
+        FEW_INTERVAL_ROWS,
+        tally_exact_range,
+        tally_row_counts,
+        warn_few_interval_rows,
+    )
+
+    _, _, _, matrix, _ = _prepare(p, y, costs, None)
+    if rows is None:
+        rows = tally_row_counts(tally, weights)
+    exact_low, exact_high, _ = tally_exact_range(p, y, weights, rows, matrix, capacity,
+                                                 float(confidence_level))
+    effective = tally.effective_rows
+    if not np.isfinite(effective) and rows is not None:
+        keep = rows > 0
+        ratio = weights[keep] / rows[keep]
+        if ratio.size and np.allclose(ratio, ratio[0], rtol=1e-9, atol=0.0):
+            effective = float(rows.sum())  # equal weights: every row counts once
+    if np.isfinite(effective) and effective < FEW_INTERVAL_ROWS:
+        warn_few_interval_rows(effective, "(effective) rows, tallied", low, high, False,
+                               exact_low, exact_high, stacklevel=stacklevel + 1)
+    return exact_low, exact_high
 
 
 def _row_replicates(w: np.ndarray, n_replicates: int, seed: Any, rows: Any = None):
