@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import numbers
 import warnings
 from collections.abc import Mapping
 from typing import Any
@@ -115,7 +116,8 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
     random_state : int, RandomState or None, default=None
         Shuffling of the folds and seed of the bootstrap behind ``cutoff_interval_``.
     n_resamples : int, default=200
-        Bootstrap resamples for ``cutoff_interval_``.
+        Bootstrap resamples for ``cutoff_interval_``; 0 computes no interval
+        (``cutoff_interval_`` is then None, as where there is no tuned cutoff).
     confidence_level : float, default=0.95
         Coverage of ``cutoff_interval_``.
     guarantee : dict or None, default=None
@@ -589,6 +591,10 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         """Bootstrap interval and fold spread of the tuned cutoff (None if there is none)."""
         check_fitted(self, "actions_")
         if self._interval_inputs is None:
+            return None
+        if isinstance(self.n_resamples, numbers.Integral) and int(self.n_resamples) == 0:
+            # no interval asked for (reading it raised a ValueError in memory and an IndexError
+            # from a Dask tally before 4 December 2026)
             return None
         if self._interval_cache is None and _is_text(self._interval_inputs[0], "summary"):
             _, summary, matrix, share = self._interval_inputs

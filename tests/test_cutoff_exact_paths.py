@@ -237,3 +237,26 @@ def test_report_shows_the_policy_exact_range(forty):
     # the interval's coverage warning is a note beside it, as for an interval computed there
     assert any(n.kind == "CutoffIntervalCoverageWarning" and "exact binomial" in n.message
                for n in content.notes)
+
+
+def test_no_interval_asked_for_reads_as_none(forty, tally_path):
+    # n_resamples=0 (the docs' "no interval" setting for a cheap Dask fit): reading the interval
+    # raised a ValueError in memory and an IndexError from the Dask tally; now it is None, and a
+    # report of the policy shows no interval instead of failing
+    da = pytest.importorskip("dask.array")
+    from sklearn.frozen import FrozenEstimator
+
+    from probwrap import CostPolicyWrapper
+    from probwrap.report import build_report
+
+    model, X, y, p = forty
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        memory = CostPolicyWrapper(FrozenEstimator(model), costs=COSTS, strategy="tuned",
+                                   n_resamples=0).fit(X, y)
+        tallied = CostPolicyWrapper(FrozenEstimator(model), costs=COSTS, strategy="tuned",
+                                    n_resamples=0).fit(da.from_array(X, chunks=20),
+                                                       da.from_array(y, chunks=20))
+        assert memory.cutoff_interval_ is None and tallied.cutoff_interval_ is None
+        content, html = build_report(model=memory, X=X, y=y, n_resamples=30)
+    assert content.cost_interval is None and 'id="cutoff-interval"' not in html
