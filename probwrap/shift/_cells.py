@@ -24,7 +24,7 @@ from scipy import sparse
 
 from .._validation import plain
 
-__all__ = ["check_cells", "cell_mean_cov", "cell_sums", "cell_totals_kish"]
+__all__ = ["cell_design_rows", "check_cells", "cell_mean_cov", "cell_sums", "cell_totals_kish"]
 
 
 def check_cells(cells: Any, n_rows: int, name: str = "cells") -> np.ndarray | None:
@@ -89,3 +89,41 @@ def cell_totals_kish(w: np.ndarray, codes: np.ndarray) -> float:
     rows however they vary within the cells."""
     tot = cell_sums(np.asarray(w, dtype=float), codes)
     return float(tot.sum() ** 2 / np.dot(tot, tot))
+
+
+def cell_design_rows(v: np.ndarray, w: np.ndarray, codes: np.ndarray, rows: float) -> float:
+    """The evidence of ``rows`` effective rows (Kish's count) divided by the cells' design
+    effect on the weighted mean of ``v`` (n, d): never more than ``rows``.
+
+    Kish's (1965, sec. 8.2; from memory) design effect of a cluster sample is the variance of a
+    mean over the variance it would have from as many independent rows; the rows' worth in
+    independent rows is their count divided by it. Here the mean's variance clustered on the
+    cells, ``V = sum_g s_g s_g^T / W^2`` (:func:`cell_mean_cov` without the small-sample factor,
+    so that every row in a cell of its own gives ``V = S / n`` for unit weights), against
+    ``S / rows`` with ``S`` the rows' weighted covariance of ``v``; over ``d`` directions the
+    mean of the design effect's eigenvalues, ``rows * tr(S^+ V) / d``, so the count is
+    ``d / tr(S^+ V)`` (the harmonic mean of the directions' counts: the directions with the most
+    correlated cells weigh most). Rows whose ``v`` is the same within a cell (a group's success
+    and failure rows, scored on the group's features) give about Kish's count of the cells'
+    total weights (:func:`cell_totals_kish`); rows that vary independently within their cells
+    give up to ``rows``. ``rows`` where ``v`` does not vary (no evidence either way).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift._cells import cell_design_rows
+    >>> v = np.repeat([[-1.0], [0.0], [1.0], [2.0]], 5, axis=0)   # 4 cells, 5 alike rows each
+    >>> round(cell_design_rows(v, np.ones(20), np.repeat(np.arange(4), 5), 20.0), 6)
+    4.0
+    """
+    v = np.asarray(v, dtype=float)
+    v = v if v.ndim > 1 else v[:, None]
+    w = np.asarray(w, dtype=float)
+    wn = w / w.sum()
+    d = v - wn @ v
+    s_rows = (d * wn[:, None]).T @ d
+    s = cell_sums(d * wn[:, None], codes)
+    ratio = float(np.trace(np.linalg.pinv(s_rows) @ (s.T @ s))) / v.shape[1]
+    if not (np.isfinite(ratio) and ratio > 0 and np.any(s_rows)):
+        return float(rows)
+    return float(min(float(rows), 1.0 / ratio))

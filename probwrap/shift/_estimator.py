@@ -25,7 +25,7 @@ from ._analytic import (
     moment_prior_interval,
 )
 from ._calibration import BiasCorrectedScaling, choose_tail, tail_log_scores
-from ._cells import cell_mean_cov, check_cells
+from ._cells import cell_design_rows, cell_mean_cov, check_cells
 from ._confusion import acc_prior, bbse_prior, heldout_confusion
 from ._estimate import (
     BoundaryPriorWarning,
@@ -186,6 +186,11 @@ class PriorEstimator(_Resampling):
     n_classes_ : int
     n_source_effective_ : float
         Kish's effective number of labelled rows.
+    n_source_design_rows_ : float
+        The labelled rows' evidence about the mean score in rows: ``n_source_effective_``
+        divided by the cells' design effect on the mean score with ``fit(cells=...)``
+        (:func:`probwrap.shift._cells.cell_design_rows`), ``n_source_effective_`` without cells.
+        What :func:`probwrap.shift.labelled_share_of_variance` takes as ``labelled_rows``.
     n_source_cells_ : int or None
         With ``fit(cells=...)``: the labelled cells of positive weight (the units of the shift
         test and the interval); None without cells.
@@ -335,6 +340,10 @@ class PriorEstimator(_Resampling):
         # harm is relative to the log loss, and the posteriors' entropy alone overstates it
         # where a calibration fitted on few rows leaves them underconfident
         self._source_log_loss = labelled_log_loss(p_cal, y_idx, w)
+        self.n_source_design_rows_ = (
+            self.n_source_effective_ if self._src_cells is None else cell_design_rows(
+                _score_rows(p_cal, self.source_prior_), w, self._src_cells,
+                self.n_source_effective_))
         # the labelled rows' share of the analytic interval (more than two classes): the
         # sandwich covariance of the calibration and the source prior, a small matrix
         self._labelled_cov = (
@@ -645,13 +654,6 @@ class PriorEstimator(_Resampling):
         cell_t = check_cells(cells, p_raw.shape[0])
         cell_s = _source_cells(self)
         n_eff = float(effective_rows) if effective_rows else _kish(w)
-        if n_eff < FEW_ROWS:
-            warnings.warn(
-                f"Only {n_eff:.3g} effective unlabelled rows; the prior estimate is very "
-                "uncertain and its interval is wide.",
-                UserWarning,
-                stacklevel=2,
-            )
         wk = w * (n_eff / w.sum())  # weights summing to the effective number of rows
         p = self.calibrate(p_raw)
         # more than 20,000 two-class Dask or Spark rows: the fold models' scores as sums
@@ -667,6 +669,21 @@ class PriorEstimator(_Resampling):
                              refit[0], axes=1)
         src = self.source_prior_
         n_src = getattr(self, "n_source_effective_", None)
+        n_units = n_eff
+        if cell_t is not None:
+            # with cells, the evidence the pseudo-rows (prior_strength), the likelihood-ratio
+            # region and the boundary warning weigh against is Kish's count divided by the
+            # cells' design effect on the mean score (cell_design_rows), not Kish's count
+            n_units = cell_design_rows(_score_rows(p, src), w, cell_t, n_eff)
+            wk = w * (n_units / w.sum())
+        if n_units < FEW_ROWS:
+            warnings.warn(
+                f"Only {n_units:.3g} effective unlabelled rows"
+                + ("" if cell_t is None else " (Kish's count over the cells' design effect)")
+                + "; the prior estimate is very uncertain and its interval is wide.",
+                UserWarning,
+                stacklevel=2,
+            )
         point = self._point(p, wk, src, self.confusion_, self.soft_confusion_, n_source=n_src)
         ml = None
         if self.method == "em":
@@ -809,12 +826,12 @@ class PriorEstimator(_Resampling):
             # likelihood-ratio region of the shares, which costs no resampling
             u = _score_rows(p, src)
             info = (u * (wk / wk.sum())[:, None]).T @ u
-            share = unlabelled_share(stat, (wk / wk.sum()) @ u, info, n_eff)
+            share = unlabelled_share(stat, (wk / wk.sum()) @ u, info, n_units)
             point, pseudo = self._settle_by_likelihood(
                 point, ml, lambda x: _loglik(p, wk, src, x),
                 lambda pt: self._fade_pull(pt, p, wk, src, stat, pvalue), pvalue, share)
         if ml is not None:
-            self._warn_boundary(ml, p, wk, n_eff, pvalue=pvalue, ml_bounds=ml_bounds,
+            self._warn_boundary(ml, p, wk, n_units, pvalue=pvalue, ml_bounds=ml_bounds,
                                 prior=point.prior, pseudo=pseudo)
         if k > 2 and bounds is not None and point.identified:
             bounds, ml_bounds = self._reconcile(bounds, ml_bounds, pvalue)
