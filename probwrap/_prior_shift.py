@@ -1026,6 +1026,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         *,
         batch_size: int | None = None,
         sample_weight: Any = None,
+        cells: Any = None,
     ) -> np.ndarray:
         """Estimate the class priors batch by batch (for example week by week).
 
@@ -1039,6 +1040,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         After a fit on Dask input the intervals come from the labelled tally's Poisson
         replicates (binary) or are the point estimate itself (multiclass: no bootstrap).
 
+        ``cells`` (one label per row; rows in memory, fitted in memory): the cell of every row
+        (rows of one aggregated group or sampled unit share one), so each batch counts its
+        cells as ``adapt(cells=...)`` does (:func:`probwrap.shift.prior_by_batch`).
+
         Warns
         -----
         ImprecisePriorWarning
@@ -1048,6 +1053,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         """
         check_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to monitor")
+        if cells is not None and (_is_dask(X) or _is_dask(sample_weight) or getattr(
+                self, "_source_tally", None) is not None):
+            raise ValueError(
+                "`cells` is supported for rows in memory fitted in memory only; these rows (or "
+                "the labelled rows fitted) are Dask or Spark data reduced to a tally, which "
+                "keeps no cells. Collect the rows, or leave `cells` out."
+            )
         if _is_dask(X) or _is_dask(sample_weight):
             # One batch per Dask block, estimated on the worker holding it.
             from .scale._entry import monitor_dask
@@ -1066,7 +1078,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if source is None or source.n_replicates == 0 or est.n_resamples == 0:
             table = prior_by_batch(
                 est, proba, batches, batch_size=batch_size, sample_weight=sample_weight,
-                fold_proba=self._fold_proba(X),
+                fold_proba=self._fold_proba(X), cells=cells,
             )
         else:
             # Fitted on Dask input: the labelled rows are a tally, so each batch's interval is

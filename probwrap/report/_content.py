@@ -532,7 +532,8 @@ def collect_content(
         # the labelled rows every batch is compared with: their error is shared by the batches
         fitted = prior_shift.prior_estimator_ if (
             prior_shift is not None and hasattr(prior_shift, "prior_estimator_")) else est
-        labelled_rows = getattr(fitted, "n_source_effective_", None) or np.inf
+        labelled_rows = (getattr(fitted, "n_source_design_rows_", None)
+                         or getattr(fitted, "n_source_effective_", None) or np.inf)
 
         content.alarm = notes.compute(
             "batches", "prevalence alarm", batch_alarm, content.batch_table,

@@ -137,7 +137,8 @@ def _class_alarms(content: MulticlassReportContent, fitted: Any, notes: NoteLog,
     from ._alarm_chart import batch_alarm
 
     table = content.batch_table
-    labelled_rows = getattr(fitted, "n_source_effective_", None) or np.inf
+    labelled_rows = (getattr(fitted, "n_source_design_rows_", None)
+                     or getattr(fitted, "n_source_effective_", None) or np.inf)
     classes = [1] if content.n_classes == 2 else list(range(content.n_classes))
     for j in classes:
         alarm = notes.compute(

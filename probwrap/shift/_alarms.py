@@ -294,8 +294,10 @@ def labelled_share_of_variance(batch_rows: Any, labelled_rows: float) -> np.ndar
         weights.
     labelled_rows : float
         Effective labelled rows the baseline was estimated from (Kish's size of the labelled
-        weights: ``PriorEstimator.n_source_effective_``; ``np.inf``: a baseline taken as exact,
-        share 0).
+        weights: ``PriorEstimator.n_source_effective_``; with labelled cells
+        ``PriorEstimator.n_source_design_rows_``, Kish's size over the cells' design effect,
+        as ``n_effective`` of a table made with ``cells``; ``np.inf``: a baseline taken as
+        exact, share 0).
 
     Returns
     -------

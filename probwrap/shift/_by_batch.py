@@ -11,15 +11,16 @@ from sklearn.utils import check_random_state
 
 from .._validation import check_proba, check_sample_weight, plain
 from ..calibration._base import rescale_extreme_weights
+from ._cells import cell_design_rows, cell_mean_cov, check_cells
 from ._estimate import PriorIntervalConflictWarning
-from ._estimator import PriorEstimator, _current_source_score, _kish
+from ._estimator import PriorEstimator, _current_source_score, _kish, _source_cells
 from ._shift_tests import _mean_cov, _score_rows, _score_stat_moments
 
 __all__ = ["prior_by_batch", "class_shift_scores"]
 
 
-def class_shift_scores(estimator: PriorEstimator, proba: Any, sample_weight: Any = None
-                       ) -> np.ndarray:
+def class_shift_scores(estimator: PriorEstimator, proba: Any, sample_weight: Any = None,
+                       *, cells: Any = None) -> np.ndarray:
     r"""Signed root of each class's one-vs-rest shift test on one batch, shape (k,).
 
     The shift test of :meth:`PriorEstimator.estimate` compares the mean per-row score of the
@@ -48,6 +49,12 @@ def class_shift_scores(estimator: PriorEstimator, proba: Any, sample_weight: Any
         :meth:`PriorEstimator.estimate`).
     sample_weight : array-like of shape (n,), default=None
         Relative weights (Kish's effective size counts the rows, as in the shift test).
+    cells : array-like of shape (n,), default=None
+        The cell of every row (rows of one aggregated group share one): the batch's mean
+        score then has its variance clustered on the cells, and with cells on either side
+        (here, or the estimator's labelled cells) the two means are compared with separate
+        variances, as :meth:`PriorEstimator.estimate` compares them (since 4 December 2026;
+        before, the one-vs-rest test always pooled, also against labelled cells).
 
     Returns
     -------
@@ -69,8 +76,13 @@ def class_shift_scores(estimator: PriorEstimator, proba: Any, sample_weight: Any
     p = estimator.calibrate(p_raw)
     src = np.asarray(estimator.source_prior_, dtype=float)
     k = src.shape[0]
-    n_eff = _kish(w)
-    m_t, c_t, _ = _mean_cov(_score_rows(p, src), w)
+    codes = check_cells(cells, p.shape[0])
+    if codes is None:
+        m_t, c_t, _ = _mean_cov(_score_rows(p, src), w)
+        n_eff = _kish(w)
+    else:
+        m_t, c_t, n_eff = cell_mean_cov(_score_rows(p, src), w, codes)
+    pooled = codes is None and _source_cells(estimator) is None
     source = _current_source_score(getattr(estimator, "_source_score", None))
     out = np.zeros(k)
     for c in range(k):
@@ -84,7 +96,7 @@ def class_shift_scores(estimator: PriorEstimator, proba: Any, sample_weight: Any
             m_s, parts = source
             projected = (np.atleast_1d(a @ m_s),
                          tuple((np.atleast_2d(a @ np.atleast_2d(v) @ a), n) for v, n in parts))
-        res = _score_stat_moments(target, projected, 2, pooled=True, source_prior=src)
+        res = _score_stat_moments(target, projected, 2, pooled=pooled, source_prior=src)
         diff = float(target[0][0] - (projected[0][0] if projected is not None else 0.0))
         out[c] = np.sign(diff) * np.sqrt(max(res.statistic, 0.0))
     return out
@@ -99,6 +111,7 @@ def prior_by_batch(
     batch_size: int | None = None,
     sample_weight: Any = None,
     fold_proba: Any = None,
+    cells: Any = None,
 ) -> np.ndarray:
     """Estimate the class priors batch by batch (for example week by week).
 
@@ -118,6 +131,14 @@ def prior_by_batch(
     fold_proba : sequence of array-like of shape (n, k), default=None
         The same rows' posteriors from each fold model of a cross-fitted model, for an
         estimator fitted with ``source_fold`` (see :meth:`PriorEstimator.estimate`).
+    cells : array-like of shape (n,), default=None
+        The cell of every row (aggregated counts: a group's success and failure rows, or the
+        rows of one sampled unit, share one). Each batch's estimate then counts its cells as
+        :meth:`PriorEstimator.estimate` does with ``cells`` (the shift test's variance
+        clustered on the cells, the pull toward the source prior weighed against Kish's count
+        over the cells' design effect), the one-vs-rest scores cluster the same way, and
+        ``n_effective`` is that design-effective count. A cell should lie within one batch; a
+        cell split over batches counts as one cell in each.
 
     Warns
     -----
@@ -131,7 +152,8 @@ def prior_by_batch(
     numpy structured array with one record per batch and fields ``batch``, ``n_rows`` (int),
     ``n_effective`` (float: Kish's effective number of rows of the batch,
     ``(sum w)^2 / sum w^2``, the number of rows without weights; what the batch's shift test
-    counts), ``prior``, ``lower``, ``upper`` (float, shape (k,) each), ``shift_statistic``,
+    counts; with ``cells``, that count divided by the cells' design effect on the batch's mean
+    score, :func:`probwrap.shift._cells.cell_design_rows`), ``prior``, ``lower``, ``upper`` (float, shape (k,) each), ``shift_statistic``,
     ``shift_pvalue`` (float), ``converged`` (bool) and ``class_shift_score`` (float, shape
     (k,): the signed root of each class's one-vs-rest shift test, :func:`class_shift_scores`;
     roughly a standard normal per batch when nothing moved, for charting one class of many).
@@ -171,6 +193,7 @@ def prior_by_batch(
             )
         if labels.dtype == object:
             labels = labels.astype(str)
+    codes = check_cells(cells, n)
     uniq, first, inverse = np.unique(labels, return_index=True, return_inverse=True)
     order = np.argsort(first, kind="stable")
     if batch_size is None and labels.dtype.kind in "iufmM" and np.any(np.diff(order) < 0):
@@ -208,6 +231,7 @@ def prior_by_batch(
             res = estimator.estimate(
                 p[rows], w[rows], random_state=rng.randint(2**31 - 1),
                 fold_proba=None if fold_proba is None else [np.asarray(f)[rows] for f in fold_proba],
+                cells=None if codes is None else codes[rows],
             )
         for item in caught:
             if issubclass(item.category, PriorIntervalConflictWarning):
@@ -217,10 +241,16 @@ def prior_by_batch(
         interval = res.interval
         if interval is None:
             interval = np.column_stack([res.prior, res.prior])
+        n_eff = _kish(w[rows])
+        if codes is not None:
+            n_eff = cell_design_rows(
+                _score_rows(estimator.calibrate(p[rows]), estimator.source_prior_), w[rows],
+                codes[rows], n_eff)
         table[row] = (
-            uniq[b], int(rows.sum()), _kish(w[rows]), res.prior, interval[:, 0],
+            uniq[b], int(rows.sum()), n_eff, res.prior, interval[:, 0],
             interval[:, 1], res.shift_statistic, res.shift_pvalue, res.converged,
-            class_shift_scores(estimator, p[rows], w[rows]),
+            class_shift_scores(estimator, p[rows], w[rows],
+                               cells=None if codes is None else codes[rows]),
         )
     if conflicts:
         _warn_conflicts(conflicts, len(order))
