@@ -210,7 +210,9 @@ def write_report(
         its failures alone; on statsmodels' star98 that made the standard errors about twice
         the group-robust ones, docs/aggregated_outcomes.md). None: with ``model`` and ``X``,
         weighted rows with identical features and different labels are one cell each (the
-        rule the wrappers' folds use), otherwise rows; with ``y_true``/``y_prob``, weighted rows
+        rule the wrappers' folds use) — but a frequency table (few levels per column, whole-
+        number counts as weights, at most 200,000 cases) is read as its cases, the rows
+        repeated by their counts, and cases are resampled, with a note — otherwise rows; with ``y_true``/``y_prob``, weighted rows
         with identical forecasts and different labels only earn a note asking for ``cells``.
         False: always rows. The page says which unit was resampled and, for binary outcomes
         with whole-number weights, the cells' Pearson dispersion (a note when it is well above

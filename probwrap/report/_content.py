@@ -47,7 +47,7 @@ from ._binary_rules import (
     rule_row,
     target_columns,
 )
-from ._cells import resampling_unit
+from ._cells import frequency_cases, resampling_unit
 from ._common import (
     MetricRow,
     NoteLog,
@@ -309,6 +309,17 @@ def collect_content(
             y = late.y
         else:
             y_true = late.y
+    if cells is None and model is not None and late is None and row_costs is None:
+        # a frequency table of whole-number counts (covariate patterns of independent cases):
+        # read as its cases, the rows repeated by their counts (report/_cells.frequency_cases)
+        table = frequency_cases(X, y, sample_weight)
+        if table is not None:
+            from sklearn.utils import _safe_indexing
+
+            index, cells = table
+            X, y, sample_weight = _safe_indexing(X, index), _safe_indexing(y, index), None
+            if groups is not None:
+                groups = _safe_indexing(np.asarray(groups), index)
     for name, value, low in (("alarm_reference", alarm_reference, 0.0),
                              ("alarm_decision_interval", alarm_decision_interval, None)):
         if value is not None and not (isinstance(value, (int, float)) and np.isfinite(value)
