@@ -110,3 +110,39 @@ def test_bad_cells_are_refused(clustered):
     est = PriorEstimator(n_resamples=0).fit(model.predict_proba(x_l), y_l)
     with pytest.raises(ValueError, match="`cells` must be 1-d"):
         prior_by_batch(est, model.predict_proba(x_u), batch, cells=c_u[:-1])
+
+
+def test_command_line_batches_take_the_cells(clustered, tmp_path, capsys, monkeypatch):
+    """`probwrap prevalence --batch-column --cell-column` (refused before): each batch is the
+    estimate with its cells, and the alarm counts it by its design-effective rows."""
+    import json
+
+    import pandas as pd
+
+    import probwrap.cli._progress as progress
+    from probwrap.cli import main
+    from probwrap.cli._prevalence_numbers import prevalence_from_reference
+
+    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+    model, (x_l, y_l, c_l), (x_u, c_u, batch) = clustered
+    p_l, p_u = model.predict_proba(x_l)[:, 1], model.predict_proba(x_u)[:, 1]
+    pd.DataFrame({"risk": p_l, "y": y_l, "unit": [f"u{c}" for c in c_l]}).to_csv(
+        tmp_path / "ref.csv", index=False)
+    pd.DataFrame({"risk": p_u, "week": batch, "unit": [f"n{c}" for c in c_u]}).to_csv(
+        tmp_path / "new.csv", index=False)
+    code = main([str(a) for a in [
+        "prevalence", "--unlabelled", tmp_path / "new.csv", "--score-column", "risk",
+        "--reference", tmp_path / "ref.csv", "--label-column", "y", "--resamples", 20,
+        "--batch-column", "week", "--cell-column", "unit", "--reference-cell-column", "unit",
+        "--format", "json"]])
+    out, err = capsys.readouterr()
+    assert code == 0, err
+    got = json.loads(out)
+    assert len(got["batches"]) == 24
+    first = got["batches"][0]
+    rows = batch == int(first["batch"])
+    api = prevalence_from_reference(p_u[rows], p_l, y_l, n_resamples=20, seed=1,
+                                    cells=c_u[rows], reference_cells=c_l)
+    assert first["shift_statistic"] == pytest.approx(api["shift_statistic"], rel=1e-9)
+    assert first["effective_rows"] == pytest.approx(api["effective_rows"], rel=1e-9)
+    assert first["effective_rows"] < first["n_rows"] / 2

@@ -167,7 +167,8 @@ def _classes_by_label(message: str, names: dict[str, Any]) -> str:
 
 
 def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
-              seed: int | None, weights: np.ndarray | None = None) -> list[dict[str, Any]]:
+              seed: int | None, weights: np.ndarray | None = None,
+              cells: np.ndarray | None = None) -> list[dict[str, Any]]:
     """Each batch's estimate. A warning met in a batch is warned once per kind (messages that
     differ only in their numbers), naming the batch it is shown for and how many more had it:
     it said "250 effective unlabelled rows" without saying of which batch."""
@@ -179,7 +180,8 @@ def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             res = estimate(proba[mask], None if weights is None else weights[mask],
-                           None if seed is None else seed + 1 + i)
+                           None if seed is None else seed + 1 + i,
+                           None if cells is None else cells[mask])
         for w in caught:
             key = (w.category, _NUMBER.sub("#", str(w.message)))
             if key in kinds:
@@ -190,7 +192,9 @@ def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
                      "prevalence": res["prevalence"], "interval": res["interval"],
                      "shift_statistic": res["shift_statistic"],
                      "shift_pvalue": res["shift_pvalue"]})
-        if weights is not None:  # the alarm counts a weighted batch by Kish's size
+        if "effective_rows" in res:  # with cells: Kish's count over the design effect
+            rows[-1]["effective_rows"] = float(res["effective_rows"])
+        elif weights is not None:  # the alarm counts a weighted batch by Kish's size
             rows[-1]["effective_rows"] = effective_rows(weights[mask], int(mask.sum()))
     for (category, _), (message, batch, batches) in kinds.items():
         more = len(batches) - 1
@@ -354,32 +358,36 @@ def _run(args: argparse.Namespace) -> int:
                                                  sample_weight=kish_scaled(weights),
                                                  **settings)
                 else:
+                    cells = None if args.cell_column is None else _cells(
+                        frame, args.cell_column, args.unlabelled, "--cell-column")
                     out = prevalence_from_reference(
                         proba, ref_scores, ref_y, method=args.method,
                         recalibrate=not args.no_recalibration,
-                        sample_weight=kish_scaled(weights),
-                        cells=None if args.cell_column is None else _cells(
-                            frame, args.cell_column, args.unlabelled, "--cell-column"),
+                        sample_weight=kish_scaled(weights), cells=cells,
                         **ref_settings, **settings,
                     )
                     out["labels"] = {"negative": labels[0], "positive": labels[1]}
                 if batch_labels is not None:
-                    def one(p: np.ndarray, w: np.ndarray | None,
-                            seed: int | None) -> dict[str, Any]:
+                    def one(p: np.ndarray, w: np.ndarray | None, seed: int | None,
+                            c: np.ndarray | None) -> dict[str, Any]:
                         kw = {**settings, "seed": seed, "sample_weight": kish_scaled(w)}
                         if args.reference is None:
                             return prevalence_from_source(p, args.source_prevalence, **kw)
                         return prevalence_from_reference(
                             p, ref_scores, ref_y, method=args.method,
-                            recalibrate=not args.no_recalibration, **ref_settings, **kw)
+                            recalibrate=not args.no_recalibration, cells=c, **ref_settings,
+                            **kw)
 
-                    out["batches"] = _by_batch(one, proba, batch_labels, args.seed, weights)
+                    out["batches"] = _by_batch(
+                        one, proba, batch_labels, args.seed, weights,
+                        None if args.reference is None else cells)
                     out["alarm"] = batch_alarm_json(
                         out["batches"], out["source_prevalence"],
                         confidence_level=args.confidence, reference=args.alarm_reference,
                         decision_interval=args.alarm_decision_interval,
                         labelled_rows=(np.inf if args.reference is None else
-                                       effective_rows(ref_weights, ref_y.shape[0])),
+                                       out.get("reference_effective_rows",
+                                               effective_rows(ref_weights, ref_y.shape[0]))),
                         baseline_standard_error=_baseline_error(
                             args, out, proba, weights, settings,
                             None if args.reference is None else
@@ -453,7 +461,8 @@ def register(subparsers: Any) -> None:
         "--cell-column", metavar="C", default=None,
         help="with --reference: column naming the cell of every unlabelled row, for counts "
         "(k of n: rows of one group share a cell); the shift test and the interval count "
-        "each cell as one unit. Not with batches",
+        "each cell as one unit; with batches, each batch's cells (a cell split over batches "
+        "counts in each)",
     )
     parser.add_argument(
         "--reference-cell-column", metavar="C", default=None,
@@ -512,10 +521,6 @@ def register(subparsers: Any) -> None:
                                        or args.reference_cell_column is not None):
             parser.error("--cell-column and --reference-cell-column go with --reference (the "
                          "cells are units of the two-sample shift test and its interval)")
-        if args.cell_column is not None and (args.batch_size is not None
-                                             or args.batch_column is not None):
-            parser.error("--cell-column does not go with --batch-size or --batch-column (a "
-                         "batch would split cells); estimate each batch's file on its own")
         alarm_settings(args, parser,
                        batched=args.batch_size is not None or args.batch_column is not None,
                        batches="--batch-size or --batch-column")

@@ -150,6 +150,18 @@ def prevalence_from_reference(
         out["interval"] = [float(res.interval[1, 0]), float(res.interval[1, 1])]
     out["recalibrated"] = bool(recalibrate)
     out["n_reference_rows"] = int(ref_y.shape[0])
+    if cells is not None:
+        # the rows' evidence as the estimate weighed it: Kish's count over the cells' design
+        # effect on the mean score (what the alarm counts a batch as)
+        from probwrap.shift._cells import cell_design_rows, check_cells
+        from probwrap.shift._shift_tests import _score_rows
+
+        w = np.ones(proba.shape[0]) if sample_weight is None else np.asarray(sample_weight, float)
+        out["effective_rows"] = cell_design_rows(
+            _score_rows(est.calibrate(two_columns(proba)), est.source_prior_), w,
+            check_cells(cells, proba.shape[0]), float(w.sum() ** 2 / np.dot(w, w)))
+    if reference_cells is not None:
+        out["reference_effective_rows"] = float(est.n_source_design_rows_)
     return out
 
 
