@@ -92,3 +92,14 @@ def test_which_tables_are_frequency_tables():
     n = (d.endog["NABOVE"] + d.endog["NBELOW"]).to_numpy(float)
     X_rows, _, _ = expand_counts(d.exog.to_numpy(float)[:, :4], k, n)
     assert frequency_table_levels(X_rows, np.repeat(np.arange(303), 2)) is None
+
+
+def test_weighted_rows_that_repeat_a_combination_are_not_a_table(ucb):
+    """Rows of people with whole-number survey weights and few-level features repeat their
+    (features, label) combinations: not a frequency table, so not expanded into cases."""
+    from probwrap.report._cells import frequency_cases
+
+    X, y, w, _ = ucb
+    twice = np.r_[np.arange(24), np.arange(24)]
+    assert frequency_cases(X, y, w) is not None
+    assert frequency_cases(X.iloc[twice], y[twice], np.r_[w, w]) is None

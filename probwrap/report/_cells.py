@@ -130,8 +130,9 @@ class FrequencyCases:
 
 def frequency_cases(X: Any, y: Any, sample_weight: Any) -> tuple[np.ndarray, FrequencyCases] | None:
     """``(index, info)`` when the weighted labelled rows ``X``, ``y`` are a frequency table of
-    whole-number counts (:func:`frequency_table_levels` of the cells the folds' rule finds) of
-    at most ``MAX_TABLE_CASES`` cases: ``index`` repeats every row by its count, so the rows it
+    whole-number counts (:func:`frequency_table_levels` of the cells the folds' rule finds, and
+    one row per combination and label: rows of people with survey weights repeat
+    combinations) of at most ``MAX_TABLE_CASES`` cases: ``index`` repeats every row by its count, so the rows it
     takes are the table's cases, each of weight 1. None otherwise.
 
     The bootstrap of such a table's cells (its combinations) or of its weighted rows draws
@@ -164,6 +165,9 @@ def frequency_cases(X: Any, y: Any, sample_weight: Any) -> tuple[np.ndarray, Fre
     found = feature_cells(X, w, y_index)
     if found is None:
         return None
+    found = np.asarray(found, dtype=np.intp)
+    if np.unique(found * (int(y_index.max()) + 1) + y_index).shape[0] < found.shape[0]:
+        return None  # a table has one row per combination and label (else: weighted rows)
     levels = frequency_table_levels(X, found)
     if levels is None:
         return None
