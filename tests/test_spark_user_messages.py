@@ -126,6 +126,53 @@ def test_schema_errors_are_raised_on_the_driver_before_any_job(spark, cancer):
         tally_scores(scores, "label")
 
 
+
+def _suggested(message: str) -> str:
+    """The Python expression an error message suggests for turning a column into numbers."""
+    import re
+
+    found = re.search(r"for example (frame\.withColumn\(.*?\)\))", message)
+    assert found, message
+    return found.group(1)
+
+
+def test_the_suggested_conversion_to_numbers_runs_under_ansi_mode(spark, cancer):
+    # Under ANSI mode (spark.sql.ansi.enabled, Spark 4's default; set here so that PySpark 3.5
+    # checks it too) Spark's plain cast raises on a value that is not a number, so the hint
+    # frame.withColumn('w', F.col('w').cast('double')) failed at collect() with
+    # CAST_INVALID_INPUT on the one value it was meant for. The hint now uses try_cast: the
+    # value becomes null, which the fit then refuses as a missing weight (counted).
+    from pyspark.sql import functions as F
+
+    X, y, lr, cal = cancer
+    labelled = X.iloc[300:360].assign(label=y[300:360], w=["1.0"] * 59 + ["heavy"])
+    scores = pd.DataFrame({"s": ["0.1", "0.2", "n/a"], "label": [0, 1, 1]})
+    before = spark.conf.get("spark.sql.ansi.enabled")
+    spark.conf.set("spark.sql.ansi.enabled", "true")
+    try:
+        frame = spark.createDataFrame(labelled)
+        with pytest.raises(ValueError, match="Spark type string") as info:
+            CalibrationWrapper(FrozenEstimator(lr), method="platt").fit(
+                frame, "label", sample_weight="w")
+        code = _suggested(str(info.value))
+        fixed = eval(code, {"frame": frame, "F": F})
+        got = fixed.select("w").toPandas()["w"]  # old hint: SparkNumberFormatException here
+        assert "try_cast(`w` AS DOUBLE)" in code
+        assert got.isna().sum() == 1 and got.iloc[:59].eq(1.0).all()
+        with pytest.raises(ValueError, match="`sample_weight` contains NaN"):
+            CalibrationWrapper(FrozenEstimator(lr), method="platt").fit(
+                fixed, "label", sample_weight="w")
+
+        frame = spark.createDataFrame(scores)
+        with pytest.raises(ValueError, match="score column 's'") as info:
+            tally_scores(frame, "label")
+        fixed = eval(_suggested(str(info.value)), {"frame": frame, "F": F})
+        assert fixed.select("s").toPandas()["s"].isna().tolist() == [False, False, True]
+        with pytest.raises(ValueError, match="1 NaN"):
+            tally_scores(fixed, "label")
+    finally:
+        spark.conf.set("spark.sql.ansi.enabled", before)
+
 def test_a_batch_the_executors_cannot_score_is_one_short_message(spark, cancer):
     X, y, lr, cal = cancer
     new = X.iloc[300:360]
@@ -143,7 +190,7 @@ def test_a_batch_the_executors_cannot_score_is_one_short_message(spark, cancer):
     exc = _raises_short(lambda: add_predictions(cal, spark.createDataFrame(text)))
     assert "could not convert string to float: 'n/a'" in _first_line(exc)
     assert "The feature column(s) ['b'] are text" in str(exc)
-    assert "F.col('b').cast('double')" in str(exc)
+    assert "frame.withColumn('b', F.expr('try_cast(`b` AS DOUBLE)'))" in str(exc)
 
     # probabilities outside [0, 1] on new rows: the wrapper's own check, and for a plain model
     # (whose probabilities were written to the frame) the same check by add_predictions

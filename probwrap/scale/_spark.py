@@ -184,8 +184,8 @@ def _column(frame: Any, value: Any, what: str, *, required: bool = False) -> str
     if what in _NUMBER_ROLES and kind not in _NUMBER_TYPES:
         raise ValueError(
             f"`{what}`={value!r} is a column of Spark type {kind}; {_NUMBER_ROLES[what]} must be "
-            f"numbers. Cast it first, for example frame.withColumn({value!r}, "
-            f"F.col({value!r}).cast('double'))."
+            f"numbers. Turn it into numbers first, for example {_to_number_hint(value)} "
+            "(values that are not numbers become null, which is then refused)."
         )
     if what not in _NUMBER_ROLES and kind in _NOT_SCALAR:
         raise ValueError(
@@ -193,6 +193,21 @@ def _column(frame: Any, value: Any, what: str, *, required: bool = False) -> str
             "per row; name a column of numbers, text or booleans."
         )
     return value
+
+
+def _to_number_hint(column: str) -> str:
+    """How to turn the Spark column ``column`` into numbers, for an error message: Spark's SQL
+    ``try_cast`` (Spark 3.2+; the oldest supported PySpark is 3.5) gives null for a value that
+    is not a number, in both modes — a plain ``cast`` raises on such a value under ANSI mode
+    (``spark.sql.ansi.enabled``, the default since Spark 4). Valid Python for any column name.
+
+    Examples
+    --------
+    >>> print(_to_number_hint("w"))
+    frame.withColumn('w', F.expr('try_cast(`w` AS DOUBLE)'))
+    """
+    quoted = "`" + column.replace("`", "``") + "`"
+    return f"frame.withColumn({column!r}, F.expr({f'try_cast({quoted} AS DOUBLE)'!r}))"
 
 
 #: Spark type names (``DataType.typeName()``) of numbers; a weight, count or score column must
@@ -296,8 +311,9 @@ def _check_text_features(estimator: Any, frame: Any, columns: list, named: bool)
         raise ValueError(
             f"The model cannot score the first row of the Spark DataFrame "
             f"({type(error).__name__}: {str(error).strip()}); its feature column(s) {listed} "
-            "are text (Spark strings): if the model expects numbers there, cast them first, "
-            f"for example F.col({text[0]!r}).cast('double')."
+            "are text (Spark strings): if the model expects numbers there, turn them into "
+            f"numbers first, for example {_to_number_hint(text[0])} (values that are not "
+            "numbers become null: missing values for the model)."
         )
     numeric = []
     for c in text:
@@ -327,8 +343,7 @@ def _check_text_features(estimator: Any, frame: Any, columns: list, named: bool)
                 f"(for example {plain(example)!r})"
                 + (f"; so are values of the text column(s) {others}" if others else "")
                 + ". Clean those values, or turn the column into numbers first (for example "
-                f"frame.withColumn({c!r}, F.expr(\"try_cast(`{c}` AS DOUBLE)\")), which makes "
-                "them null)."
+                f"{_to_number_hint(c)}, which makes them null: missing values for the model)."
             )
     try:
         frame._probwrap_text_checked = (seen if isinstance(seen, set) else set()) | {key}
@@ -503,8 +518,9 @@ def _score_column(frame: Any, named: list, what: str) -> str:
     if kind not in _NUMBER_TYPES:
         raise ValueError(
             f"The score column {rest[0]!r} of the Spark DataFrame given as `{what}` is of Spark "
-            f"type {kind}; scores must be numbers. Cast it first, for example "
-            f"frame.withColumn({rest[0]!r}, F.col({rest[0]!r}).cast('double'))."
+            f"type {kind}; scores must be numbers. Turn it into numbers first, for example "
+            f"{_to_number_hint(rest[0])} (values that are not numbers become null, which is "
+            "then refused)."
         )
     return rest[0]
 
@@ -1171,7 +1187,8 @@ def _scoring_message(exc: BaseException, n_rows: int, who: str, text: list) -> s
     if text:
         message += (
             f"\n(The feature column(s) {text[:5]} are text in the Spark DataFrame; the model reads "
-            "them as numbers only when every value is one: cast them, for example "
-            f"F.col({text[0]!r}).cast('double').)"
+            "them as numbers only when every value is one: turn them into numbers first, for "
+            f"example {_to_number_hint(text[0])}, which makes the other values null: missing "
+            "values for the model.)"
         )
     return message
