@@ -155,3 +155,98 @@ def test_slope_on_probabilities_reads_log_odds_floored_at_the_bound(margins):
     given = slope_intercept_fit_log_odds(y, d)
     exact = sm.GLM(y, sm.add_constant(d), family=sm.families.Binomial()).fit()
     assert given.slope == pytest.approx(exact.params[1], rel=1e-6)
+
+
+# -- by group ------------------------------------------------------------------------------------
+# Groups: the breast-cancer rows split at the median of "mean texture" (284 and 285 rows, 118 and
+# 239 malignant; 201 and 194 of them beyond +-27.63). Before, each group's slope was fitted on
+# logit(expit(d)) clipped at +-27.63 while the overall slope read the log-odds: 0.175 and 0.172
+# where statsmodels' Logit on the given log-odds gives 0.122 and 0.123.
+@pytest.fixture(scope="module")
+def texture_groups():
+    X, _ = load_breast_cancer(return_X_y=True)
+    return np.where(X[:, 1] > np.median(X[:, 1]), "rough", "smooth")
+
+
+def _group_references(d, y, g):
+    """statsmodels per group: Logit slope on the given log-odds, GLM(binomial) intercept with
+    the log-odds as offset, and the exact log loss."""
+    import statsmodels.api as sm
+    from scipy.special import log_expit
+
+    out = {}
+    for k in np.unique(g):
+        m = g == k
+        slope = sm.Logit(y[m], sm.add_constant(d[m])).fit(disp=0).params[1]
+        offset = sm.GLM(y[m], np.ones((int(m.sum()), 1)), family=sm.families.Binomial(),
+                        offset=d[m]).fit().params[0]
+        loss = -np.mean(np.where(y[m] == 1, log_expit(d[m]), log_expit(-d[m])))
+        out[str(k)] = (slope, offset, loss)
+    return out
+
+
+def test_group_slopes_read_the_given_log_odds(wide_margins, texture_groups, glm):
+    from probwrap.report import build_report
+
+    d, y = wide_margins
+    ref = _group_references(d, y, texture_groups)
+    assert ref["rough"][0] == pytest.approx(0.122, abs=5e-4)
+    assert ref["smooth"][0] == pytest.approx(0.123, abs=5e-4)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        content, _ = build_report(y_true=y, y_prob=d, score_scale="log-odds",
+                                  groups=texture_groups, n_resamples=20, random_state=0)
+    checks = content.group_checks
+    assert {c.group for c in checks.groups} == {"rough", "smooth"}
+    for c in checks.groups:
+        slope, offset, loss = ref[c.group]
+        assert c.judged
+        assert c.calibration_slope == pytest.approx(slope, rel=1e-6)  # was 0.175 / 0.172
+        assert c.calibration_intercept == pytest.approx(offset, rel=1e-6)
+        assert c.log_loss == pytest.approx(loss, rel=1e-12)
+    # the groups' "all" row is the overall slope of the report's own metric rows
+    assert checks.overall.calibration_slope == pytest.approx(glm[0][1], rel=1e-6)
+    assert checks.overall.calibration_slope == pytest.approx(
+        _metrics(content)["slope"].value, rel=1e-9)
+    assert not any("lie closer than" in n for n in checks.notes)
+
+
+def test_cli_group_slopes_read_the_given_log_odds(wide_margins, texture_groups, tmp_path,
+                                                  capsys):
+    import json
+
+    d, y = wide_margins
+    ref = _group_references(d, y, texture_groups)
+    pd.DataFrame({"margin": d, "y": y, "texture": texture_groups}).to_csv(
+        tmp_path / "scores.csv", index=False)
+    code = main(["report", "--scores", str(tmp_path / "scores.csv"), "--score-column",
+                 "margin", "--label-column", "y", "--scale", "log-odds", "--group-column",
+                 "texture", "--resamples", "20", "--out", str(tmp_path / "r.html"),
+                 "--format", "json"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    groups = json.loads(captured.out)["groups"]
+    for row in groups["groups"]:
+        assert row["calibration_slope"] == pytest.approx(ref[row["group"]][0], rel=1e-6)
+        assert row["calibration_intercept"] == pytest.approx(ref[row["group"]][1], rel=1e-6)
+    assert not any("lie closer than" in n for n in groups["notes"])
+    page = (tmp_path / "r.html").read_text()
+    assert f"<td>{ref['rough'][0]:.3f}</td>" in page and "<td>0.175</td>" not in page
+
+
+def test_calibration_by_group_checks_its_log_odds(wide_margins, texture_groups):
+    from scipy.special import expit
+
+    from probwrap.metrics import calibration_by_group
+
+    d, y = wide_margins
+    with pytest.raises(ValueError, match=r"`y_prob` must be expit\(`log_odds`\)"):
+        calibration_by_group(y, expit(d), texture_groups, log_odds=2 * d, n_resamples=0)
+    with pytest.raises(ValueError, match="`log_odds` must be 569 finite numbers"):
+        calibration_by_group(y, expit(d), texture_groups, log_odds=d[:10], n_resamples=0)
+    # the gap of the slopes between the groups: its interval resamples the given log-odds too
+    res = calibration_by_group(y, expit(d), texture_groups, log_odds=d, n_resamples=20)
+    gap = next(x for x in res.gaps if x.metric == "calibration_slope")
+    ref = _group_references(d, y, texture_groups)
+    assert gap.gap == pytest.approx(abs(np.log(ref["rough"][0] / ref["smooth"][0])),
+                                       rel=1e-5)

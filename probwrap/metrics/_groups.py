@@ -22,8 +22,12 @@ from .._validation import check_target_labels, plain
 from ._bootstrap import bootstrap_interval
 from ._calibration_tests import smooth_calibration_error
 from ._inputs import count_scale_weights, prepare_binary
-from ._scores import brier_score, log_loss
-from ._slope import calibration_slope_intercept, slope_intercept_fit
+from ._scores import brier_score, log_loss, log_loss_of_log_odds
+from ._slope import (
+    calibration_slope_intercept,
+    slope_intercept_fit,
+    slope_intercept_fit_log_odds,
+)
 
 __all__ = ["GroupCheck", "GroupGap", "GroupChecks", "calibration_by_group"]
 
@@ -329,7 +333,9 @@ def _interval(notes, label, metric, y, p, w, n_resamples, level, seed,
 
 
 def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples, level,
-               seed, notes, cells=None) -> GroupCheck:
+               seed, notes, cells=None, x=None) -> GroupCheck:
+    """One group's row of the table; ``x``: its forecasts as given log-odds (None: read
+    from ``p``), which the slope, intercept and log loss are computed on."""
     pos = w * y
     neg = w * (1.0 - y)
     eff_rows, eff_pos, eff_neg = judged_sizes(w, y)
@@ -345,7 +351,12 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
     def slope_parts():
         try:
             with _noted(notes, label):
-                r = calibration_slope_intercept(y, p, sample_weight=w, labels=[0.0, 1.0])
+                if x is None:
+                    r = calibration_slope_intercept(y, p, sample_weight=w, labels=[0.0, 1.0])
+                else:
+                    r = slope_intercept_fit_log_odds(y, x, sample_weight=w, labels=[0.0, 1.0])
+                    for note in r.notes:  # forecasts that do not vary or separate the classes
+                        notes.append(f"group {plain(label)!r}: {note}")
             return r.slope, r.intercept
         except ValueError as exc:
             notes.append(f"group {plain(label)!r}: no calibration slope ({exc})")
@@ -389,8 +400,10 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
         brier=_safe(notes, label, brier_score, y, p, sample_weight=w, labels=[0.0, 1.0]),
         brier_interval=_interval(notes, label, brier_score, y, p, w, n_resamples, level, seed,
                                  cells),
-        log_loss=_safe(notes, label, log_loss, y, p, sample_weight=w, labels=[0.0, 1.0]),
-        log_loss_interval=_interval(notes, label, log_loss, y, p, w, n_resamples, level, seed,
+        log_loss=(_safe(notes, label, log_loss, y, p, sample_weight=w, labels=[0.0, 1.0])
+                  if x is None else log_loss_of_log_odds(y, x, sample_weight=w)),
+        log_loss_interval=_interval(notes, label, log_loss if x is None else log_loss_of_log_odds,
+                                    y, p if x is None else x, w, n_resamples, level, seed,
                                     cells),
         cells=units,
         **decision,
@@ -412,6 +425,7 @@ def calibration_by_group(
     confidence_level: float = 0.95,
     random_state: int | None = 0,
     cells: Any = None,
+    log_odds: Any = None,
 ) -> GroupChecks:
     """Calibration, scores and the outcomes of a decision rule in every group.
 
@@ -476,6 +490,13 @@ def calibration_by_group(
         intervals are 2.7-8.6 times as wide as statsmodels' cluster-robust ones, the cells'
         0.90-1.08 times. None: rows, as before, draw for draw. With cells a group is judged
         only when its cells, not only its trials, reach ``min_rows`` and ``min_events``.
+    log_odds : array-like of shape (n,), optional
+        The same forecasts as log-odds (a ``decision_function``, a score column read with
+        ``--scale log-odds``), with ``y_prob`` equal to ``expit(log_odds)``: the calibration
+        slope and intercept (and their gaps) are then fitted on them as given, and the log loss
+        computed from them exactly, as the report's overall rows are. None: from ``y_prob``,
+        whose log-odds are clipped at +-27.6 (``logit(1 - 1e-12)``; a probability is exactly
+        0 or 1 beyond about +-36.7).
 
     Examples
     --------
@@ -501,6 +522,7 @@ def calibration_by_group(
             "group's top-label reliability; for one class against the rest, pass that column."
         )
     y, p, w = prepare_binary(y_true, y_prob, sample_weight, labels)
+    x = None if log_odds is None else _check_log_odds(log_odds, p)
     w = count_scale_weights(w, "calibration_by_group")
     g = check_group_labels(groups, p.shape[0])
     cell_codes = None if cells is None else cell_labels(cells, p.shape[0])
@@ -532,8 +554,9 @@ def calibration_by_group(
         # dates and durations stay NumPy scalars (their .item() is integer nanoseconds)
         label = key.item() if hasattr(key, "item") and g.dtype.kind not in "mM" else key
         checks.append(_check_one(label, y[rows], p[rows], w[rows], *args, computed,
-                                 None if cell_codes is None else cell_codes[rows]))
-    overall = _check_one("all", y, p, w, *args, computed, cell_codes)
+                                 None if cell_codes is None else cell_codes[rows],
+                                 None if x is None else x[rows]))
+    overall = _check_one("all", y, p, w, *args, computed, cell_codes, x)
     judged = sorted((c for c in checks if c.judged), key=lambda c: -np.nan_to_num(
         c.calibration_error, nan=-1.0))
     small = sorted((c for c in checks if not c.judged), key=lambda c: -c.weight)
@@ -546,7 +569,7 @@ def calibration_by_group(
         # difference would be off-centre (and each evaluation takes about 30 ms)
         gaps = [gap if gap.metric == "calibration_error" else
                 _gap_interval(gap, rows_of, y, p, w, cutoff, matrix, int(n_resamples),
-                              float(confidence_level), random_state, computed, cell_codes)
+                              float(confidence_level), random_state, computed, cell_codes, x)
                 for gap in gaps]
     notes = []
     if small:
@@ -566,20 +589,44 @@ def calibration_by_group(
                        resampled="rows" if cell_codes is None else "cells")
 
 
-def _metric_of(metric: str, y: np.ndarray, p: np.ndarray, w: np.ndarray, cutoff, matrix) -> float:
-    """One gap quantity of one (resampled) group; NaN where it is not defined."""
+
+def _check_log_odds(log_odds: Any, p: np.ndarray) -> np.ndarray:
+    """``log_odds`` as 1-d finite floats (a copy), checked to be the log-odds of ``p``."""
+    from scipy.special import expit
+
+    try:
+        x = np.array(log_odds, dtype=float)
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"`log_odds` must be numbers (one log-odds per row) ({exc}).") from None
+    if x.shape != p.shape or not np.all(np.isfinite(x)):
+        raise ValueError(f"`log_odds` must be {p.shape[0]} finite numbers, one per row of "
+                         f"`y_prob`; got shape {x.shape}"
+                         + ("" if x.shape != p.shape else " with non-finite values") + ".")
+    gap = float(np.max(np.abs(expit(x) - p))) if p.size else 0.0
+    if gap > 1e-9:
+        raise ValueError("`y_prob` must be expit(`log_odds`) (the same forecasts on the two "
+                         f"scales); they differ by up to {plain(gap)}.")
+    return x
+
+
+def _metric_of(metric: str, y: np.ndarray, p: np.ndarray, w: np.ndarray, cutoff, matrix,
+               x: np.ndarray | None = None) -> float:
+    """One gap quantity of one (resampled) group; NaN where it is not defined. ``x``: the
+    forecasts as given log-odds (for the slope, intercept and log loss), or None."""
     lab = [0.0, 1.0]
     if metric == "calibration_error":
         return float(smooth_calibration_error(y, p, sample_weight=w, labels=lab))
     if metric in ("calibration_intercept", "calibration_slope"):
-        fit = slope_intercept_fit(y, p, sample_weight=w, labels=lab)
+        fit = (slope_intercept_fit(y, p, sample_weight=w, labels=lab) if x is None else
+               slope_intercept_fit_log_odds(y, x, sample_weight=w, labels=lab))
         if metric == "calibration_intercept":
             return fit.intercept
         return float(np.log(fit.slope)) if fit.slope > 0 else float("nan")
     if metric == "brier":
         return float(brier_score(y, p, sample_weight=w, labels=lab))
     if metric == "log_loss":
-        return float(log_loss(y, p, sample_weight=w, labels=lab))
+        return (float(log_loss(y, p, sample_weight=w, labels=lab)) if x is None else
+                log_loss_of_log_odds(y, x, sample_weight=w))
     act = p > cutoff
     pos, neg = w * y, w * (1.0 - y)
     if metric == "share_acted_on":
@@ -593,11 +640,13 @@ def _metric_of(metric: str, y: np.ndarray, p: np.ndarray, w: np.ndarray, cutoff,
 
 
 def _gap_interval(gap: GroupGap, rows_of: dict, y, p, w, cutoff, matrix, n_resamples: int,
-                  level: float, random_state, notes: list[str], cells=None) -> GroupGap:
+                  level: float, random_state, notes: list[str], cells=None,
+                  x=None) -> GroupGap:
     """``gap`` with the percentile interval of ``value(highest) - value(lowest)``, rows
     resampled within each group (counts as weights, as :func:`bootstrap_interval` does)."""
     def value(idx: np.ndarray, ww: np.ndarray) -> float:
-        return _metric_of(gap.metric, y[idx], p[idx], ww, cutoff, matrix)
+        return _metric_of(gap.metric, y[idx], p[idx], ww, cutoff, matrix,
+                          None if x is None else x[idx])
 
     return gap_with_interval(gap, value, rows_of, w, n_resamples, level, random_state, notes,
                              cells=cells)

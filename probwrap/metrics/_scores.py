@@ -73,6 +73,22 @@ def log_loss(
     return float(np.dot(w, loss) / w.sum())
 
 
+def log_loss_of_log_odds(y_true: Any, log_odds: Any, sample_weight: Any = None) -> float:
+    """Log loss of 0/1 labels under forecasts given as log-odds ``x``: the weighted mean of
+    ``log(1 + exp(-x))`` over positives and ``log(1 + exp(x))`` over negatives, exact at any
+    size of ``x`` (no clip: a probability ``expit(x)`` is exactly 0 or 1 beyond about
+    +-36.7, where the log loss of probabilities must clip).
+
+    Examples
+    --------
+    >>> round(log_loss_of_log_odds([1, 0], [0.0, 0.0]), 6)  # log 2
+    0.693147
+    """
+    y = np.asarray(y_true, dtype=float)
+    x = np.asarray(log_odds, dtype=float)
+    return float(np.average(np.logaddexp(0.0, np.where(y == 1.0, -x, x)),
+                            weights=sample_weight))
+
 def brier_score(
     y_true: Any, y_prob: Any, *, sample_weight: Any = None, labels: Any = None
 ) -> float:

@@ -29,6 +29,7 @@ from ..metrics import (
     expected_calibration_error,
     log_loss,
 )
+from ..metrics._scores import log_loss_of_log_odds
 from ..metrics._slope import slope_intercept_fit, slope_intercept_fit_log_odds
 from ..plot._common import binary_labels, positive_proba
 from ..shift import PriorEstimator, adjust_to_prior, prior_by_batch, shift_cutoff
@@ -187,17 +188,6 @@ def _metric_rows(y, p, w, n_bins, n_resamples, level, rng, notes,
                        log_odds if key in on_log_odds and log_odds is not None else p,
                        w, ideal, n_resamples, level, seed, groups=groups, **kw)
             for key, label, fn, kw, ideal in specs]
-
-
-def log_loss_of_log_odds(y_true: Any, log_odds: Any, sample_weight: Any = None) -> float:
-    """Log loss of 0/1 labels under forecasts given as log-odds ``x``: the weighted mean of
-    ``log(1 + exp(-x))`` over positives and ``log(1 + exp(x))`` over negatives, exact at any
-    size of ``x`` (no clip: a probability ``expit(x)`` is exactly 0 or 1 beyond about
-    +-36.7, where the log loss of probabilities must clip)."""
-    y = np.asarray(y_true, dtype=float)
-    x = np.asarray(log_odds, dtype=float)
-    return float(np.average(np.logaddexp(0.0, np.where(y == 1.0, -x, x)),
-                            weights=sample_weight))
 
 
 def _given_log_odds(scores: Any, name: str) -> np.ndarray:
@@ -583,8 +573,10 @@ def collect_content(
         rec = content.recommendation
         cutoff = rec.cutoff if rec is not None and rec.cutoff is not None else (
             content.chosen_cutoff)
+        # given log-odds: each group's slope, intercept and log loss are read from them as
+        # the overall rows are (not from logit(p), clipped at +-27.6)
         content.group_checks = calibration_by_group(
-            y01, p, groups, cutoff=cutoff,
+            y01, p, groups, cutoff=cutoff, log_odds=log_odds,
             costs=content.cost_matrix if cutoff is not None else None, sample_weight=w,
             n_resamples=n_resamples, confidence_level=confidence_level,
             random_state=int(rng.randint(0, 2**31 - 1)), cells=content.resampling.groups,
