@@ -355,3 +355,53 @@ def test_multiclass_dask_interval_equals_the_in_memory_interval(model, calibrati
     iv = remote.target_prior_interval_
     assert np.all(iv[:, 1] - iv[:, 0] < 0.3)
     assert np.all((iv[:, 0] <= remote.target_prior_) & (remote.target_prior_ <= iv[:, 1]))
+
+
+@pytest.mark.parametrize("n_resamples", [200, 0])
+@pytest.mark.parametrize("loader", ["wine", "iris"])
+def test_multiclass_dask_warns_of_a_share_at_the_edge_as_in_memory(loader, n_resamples):
+    # scikit-learn's bundled wine and iris data: a shrunk logistic model on half the rows, a
+    # quarter labelled, the last quarter's rows of classes 0 and 1 as the unlabelled set
+    # (class 2 absent: its maximum-likelihood share is 1e-12 / 1e-9). In memory adapt warns
+    # BoundaryPriorWarning (wine: "the data point there firmly", iris: "the model separates
+    # the classes weakly"); the reductions (more than KEPT_ROWS rows; here the tally_path
+    # fixture) warned nothing before. Now the same message from the same sums; the whole
+    # unlabelled quarter (every class) draws none on either path.
+    import warnings
+
+    import dask
+    from sklearn.datasets import load_iris, load_wine
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    from probwrap.shift import BoundaryPriorWarning
+
+    X, y = {"wine": load_wine, "iris": load_iris}[loader](return_X_y=True)
+    idx = np.random.default_rng(0).permutation(y.shape[0])
+    half = y.shape[0] // 2
+    fitted = make_pipeline(StandardScaler(), LogisticRegression(C=0.05, max_iter=1000))
+    model = FrozenEstimator(fitted.fit(X[idx[:half]], y[idx[:half]]))
+    rest = idx[half:]
+    lab, new = rest[: rest.shape[0] // 2], rest[rest.shape[0] // 2:]
+
+    def edge_warnings(rows, on_dask):
+        with warnings.catch_warnings(record=True) as caught, dask.config.set(scheduler="threads"):
+            warnings.simplefilter("always")
+            w = PriorShiftWrapper(model, n_resamples=n_resamples)
+            if on_dask:
+                c = (20, X.shape[1])
+                w.fit(da.from_array(X[lab], chunks=c), da.from_array(y[lab], chunks=20)).adapt(
+                    da.from_array(X[rows], chunks=c))
+            else:
+                w.fit(X[lab], y[lab]).adapt(X[rows])
+        return w, [str(m.message) for m in caught if issubclass(m.category, BoundaryPriorWarning)]
+
+    two = new[y[new] != 2]
+    local, expected = edge_warnings(two, False)
+    remote, got = edge_warnings(two, True)
+    assert local.prior_estimate_.ml_prior[2] < 1e-6
+    assert len(expected) == 1
+    assert ("firmly" if loader == "wine" else "separates the classes weakly") in expected[0]
+    assert got == expected  # was []
+    np.testing.assert_allclose(remote.target_prior_, local.target_prior_, atol=1e-8)
+    assert edge_warnings(new, False)[1] == edge_warnings(new, True)[1] == []

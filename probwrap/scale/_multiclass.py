@@ -663,6 +663,15 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
                 pvalue, share)
         prior, n_iter, converged, distance = (point.prior, point.n_iter, point.converged,
                                               point.distance)
+        if ml is not None:
+            # the in-memory warning of a maximum-likelihood share at the edge, from the same
+            # sums (the rows' information is the weighted mean of u u'; the log-likelihood
+            # one more pass, only without an interval and only where a share is at the edge)
+            scale = n_eff / total
+            est._warn_boundary(
+                ml, None, None, n_eff, pvalue=pvalue, ml_bounds=ml_interval, prior=prior,
+                pseudo=pseudo, info=suu / total,
+                loglik=lambda x: scale * float(parts.reduce(_loglik_block, src, x)))
     finally:
         parts.release()
     # the same harm scale as in memory (for the max_harm cutoff): from the same sums

@@ -1063,10 +1063,17 @@ class PriorEstimator(_Resampling):
             stacklevel=3,
         )
 
-    def _warn_boundary(self, ml: np.ndarray, p: np.ndarray, w: np.ndarray, n_eff: float, *,
-                       pvalue: float | None = None, ml_bounds: np.ndarray | None = None,
-                       prior: np.ndarray | None = None, pseudo: float | None = None) -> None:
+    def _warn_boundary(self, ml: np.ndarray, p: np.ndarray | None, w: np.ndarray | None,
+                       n_eff: float, *, pvalue: float | None = None,
+                       ml_bounds: np.ndarray | None = None, prior: np.ndarray | None = None,
+                       pseudo: float | None = None, info: np.ndarray | None = None,
+                       loglik: Any = None) -> None:
         """Warn when the maximum-likelihood prior puts a class at (or next to) share 0 or 1.
+
+        ``p``, ``w``: the unlabelled rows' calibrated posteriors and weights (summing to
+        ``n_eff``); or, for rows that stay where they live (Dask, Spark), None with ``info``
+        (the weighted mean of the rows' score products ``u u'``) and ``loglik`` (the shares'
+        log-likelihood, weights summing to ``n_eff``) computed from their sums.
 
         Where the data point firmly at the edge — the shift test rejects "no shift" at the
         interval's level and the interval of that share (``ml_bounds``) excludes the source
@@ -1079,9 +1086,10 @@ class PriorEstimator(_Resampling):
             return
         # Information per row about the prior at the source prior (score variance), and the
         # standard error it implies for n_eff rows: weak separation shows as small information.
-        q = p / src
-        u = q[:, 1:] - q[:, :1]
-        info = (u * (w / w.sum())[:, None]).T @ u
+        if info is None:
+            q = p / src
+            u = q[:, 1:] - q[:, :1]
+            info = (u * (w / w.sum())[:, None]).T @ u
         try:
             cov = np.linalg.pinv(info) / max(n_eff, 1.0)
         except np.linalg.LinAlgError:  # pragma: no cover
@@ -1098,7 +1106,10 @@ class PriorEstimator(_Resampling):
             prior is not None)
         # without an interval, the likelihood-ratio statistic of the source shares (the
         # log-likelihood is 0 there) against the chi-square quantile of the interval's level
-        lr_source = 2.0 * _loglik(p, w, src, ml) if ml_bounds is None else None
+        if ml_bounds is not None:
+            lr_source = None
+        else:
+            lr_source = 2.0 * (_loglik(p, w, src, ml) if loglik is None else float(loglik(ml)))
 
         def firm(j: int) -> bool:
             if not rejects:
