@@ -328,7 +328,10 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
             sw, dict(fit_params),
             weights_used_here=f"strategy={self.strategy!r} fits nothing else on these rows",
         )
-        estimator = clone(self.estimator).fit(X, y_arr, **est_params)
+        try:
+            estimator = clone(self.estimator).fit(X, y_arr, **est_params)
+        except ValueError as exc:  # as the held-out strategies report a fold that fails
+            raise ValueError(self._all_rows_failure(y_index, classes, exc)) from exc
         self.estimator_ = estimator
         self.classes_ = np.asarray(estimator.classes_)
         if hasattr(estimator, "n_features_in_"):

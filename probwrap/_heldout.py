@@ -368,6 +368,15 @@ def is_frozen(estimator: Any) -> bool:
     return isinstance(estimator, FrozenEstimator)
 
 
+
+def _class_fix(smallest: str) -> str:
+    """The advice when the estimator cannot be fitted even on all rows: its own message says
+    what is wrong (too few rows of a class for the model, or something else, such as NaN)."""
+    return (f"If the estimator's message below is about too few rows of a class, give "
+            f"{smallest} more rows, or regularise it (its message may say how); otherwise fix "
+            "what it names.")
+
+
 class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
     """Base class of the probwrap wrappers: held-out predictions, routing, tags.
 
@@ -724,12 +733,24 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                    "pass a model fitted elsewhere inside sklearn.frozen.FrozenEstimator so "
                    "nothing is refitted here.")
         else:
-            fix = (f"It fails on all the rows too, so more folds cannot help: give {smallest} "
-                   f"more rows, or {regularise}.")
+            fix = (f"It fails on all the rows too, so more folds cannot help: "
+                   f"{_class_fix(smallest)}")
         return (f"Cross-fitting `estimator` ({name}) failed on the training part of a fold. "
                 f"Rows per class in all {y.shape[0]} rows: {shown}; in the training parts of "
                 f"the {len(splits)} folds (`cv`): {ranges}. {fix} The estimator said (counting "
                 f"the rows of the training part it was given): {exc}")
+
+    def _all_rows_failure(self, y_index: np.ndarray, classes: np.ndarray, exc: Exception) -> str:
+        """Why fitting the estimator on all rows failed (a strategy that fits it once, with no
+        folds), in the words of :meth:`_fold_failure`: the class counts and the fixes."""
+        counts = np.bincount(y_index, minlength=classes.shape[0])
+        j = int(np.argmin(counts))
+        shown = ", ".join(f"{plain(classes[k])!r}: {int(counts[k])}"
+                          for k in range(classes.shape[0]))
+        smallest = f"the smallest class ({plain(classes[j])!r}, {int(counts[j])} rows)"
+        return (f"Fitting `estimator` ({type(self.estimator).__name__}) on all the rows "
+                f"failed. Rows per class in all {y_index.shape[0]} rows: {shown}. "
+                f"{_class_fix(smallest)} The estimator said: {exc}")
 
     def _cross_fit(self, X, y, splits, est_params, response, classes) -> np.ndarray:
         """Held-out ``response`` of a clone fitted on each split's training rows.

@@ -18,7 +18,7 @@ from scipy.linalg import LinAlgWarning
 from sklearn.datasets import load_breast_cancer, load_iris
 from sklearn.discriminant_analysis import QuadraticDiscriminantAnalysis
 
-from probwrap import CalibrationWrapper, PriorShiftWrapper
+from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
 
 
 @pytest.fixture(autouse=True)
@@ -99,3 +99,66 @@ def test_more_folds_than_rows_of_any_class_names_cv_and_counts(wrapper):
     assert "`cv=5` stratified folds" in text and "0: 4, 1: 4" in text
     assert "use `cv=4` or fewer" in text
     wrapper(LogisticRegression(max_iter=5000), cv=4).fit(X[idx][:, :3], y[idx])
+
+
+COSTS3 = np.ones((3, 3)) - np.eye(3)
+
+
+def test_cost_policy_fitting_once_reports_a_failure_as_the_folds_do():
+    # CostPolicyWrapper's default strategy ("bayes") fits the model once, on all rows: a QDA
+    # refusing a rank-deficient class raised its bare message there ("The covariance matrix of
+    # class 0 is not full rank...", no counts, no fixes) where CalibrationWrapper,
+    # PriorShiftWrapper and the tuned strategy, which cross-fit, give the fold-failure message.
+    # Now the same counts and advice, and the estimator's words.
+    X, y = _iris()
+    with pytest.raises(ValueError) as info:
+        CostPolicyWrapper(_RefusingQDA(), costs=COSTS3).fit(X, y)
+    text = str(info.value)
+    assert text.startswith("Fitting `estimator` (_RefusingQDA) on all the rows failed. "
+                           "Rows per class in all 12 rows: 0: 3, 1: 3, 2: 6.")
+    assert "give the smallest class (0, 3 rows) more rows, or regularise it" in text
+    assert "The estimator said: The covariance matrix of class 0" in text
+    # the strategies that cross-fit: the fold message, with the same counts and advice
+    for wrapper in (CalibrationWrapper(_RefusingQDA(), cv=5),
+                    PriorShiftWrapper(_RefusingQDA(), cv=5),
+                    CostPolicyWrapper(_RefusingQDA(), costs=COSTS3, strategy="tuned", cv=5)):
+        with pytest.raises(ValueError) as info:
+            wrapper.fit(X, y)
+        fold = str(info.value)
+        assert "Rows per class in all 12 rows: 0: 3, 1: 3, 2: 6" in fold
+        assert "more folds cannot help" in fold
+        assert "give the smallest class (0, 3 rows) more rows, or regularise it" in fold
+
+
+def test_fitting_once_needs_no_folds_so_all_rows_are_enough():
+    # 6 malignant rows and 4 features: QDA fits on all 36 rows but not on a fold's 4-5. The
+    # "bayes" strategy fits once on all rows, so it fits (no fold is fitted); the tuned strategy
+    # and the other wrappers cross-fit and say to use more folds, which then fits.
+    from sklearn.metrics import log_loss
+
+    X, y = _cancer()
+    policy = CostPolicyWrapper(_RefusingQDA(), costs={"fp": 1.0, "fn": 5.0}).fit(X, y)
+    direct = _RefusingQDA().fit(X, y)
+    np.testing.assert_allclose(policy.predict_proba(X), direct.predict_proba(X))
+    assert log_loss(y, policy.predict_proba(X)) < 0.5
+    with pytest.raises(ValueError, match="It fits on all the rows: use more folds"):
+        CostPolicyWrapper(_RefusingQDA(), costs={"fp": 1.0, "fn": 5.0}, strategy="tuned",
+                          cv=5).fit(X, y)
+    CostPolicyWrapper(_RefusingQDA(), costs={"fp": 1.0, "fn": 5.0}, strategy="tuned",
+                      cv=12).fit(X, y)
+
+
+def test_a_failure_that_is_not_about_rows_is_not_blamed_on_them():
+    # NaN in X: the advice no longer says only "give the smallest class more rows"
+    from sklearn.linear_model import LogisticRegression
+
+    X, y = load_breast_cancer(return_X_y=True)
+    X = X[:80, :3].copy()
+    y = y[:80]
+    X[3, 1] = np.nan
+    for wrapper in (CalibrationWrapper(LogisticRegression()),
+                    CostPolicyWrapper(LogisticRegression(), costs={"fp": 1.0, "fn": 5.0})):
+        with pytest.raises(ValueError) as info:
+            wrapper.fit(X, y)
+        text = str(info.value)
+        assert "otherwise fix what it names" in text and "Input X contains NaN" in text
