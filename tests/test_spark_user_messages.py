@@ -273,17 +273,20 @@ def test_the_driver_still_collects_at_most_the_limit(spark, cancer, monkeypatch)
     assert fitted.tally_.kept_rows is None and fitted.tally_.n_rows == 269
 
 
-def test_a_small_multiclass_set_fitted_from_tallies_warns(spark):
-    # with `clip` given the multiclass calibration has no first pass bringing the rows, so a
-    # small set is fitted from one-vs-rest tallies: now with a BinnedFitWarning saying so
+def test_a_small_multiclass_set_with_clip_is_fitted_on_its_rows(spark):
+    # with `clip` given the multiclass calibration had no pass bringing a small set's rows, so
+    # it was fitted from one-vs-rest tallies with a BinnedFitWarning (Platt on 89 wine rows:
+    # probabilities up to 0.11 from the in-memory fit); now one pass brings them (also spread
+    # over partitions) and the fit is the in-memory fit, without the warning
     Xw, yw = load_wine(return_X_y=True)
     Xw = pd.DataFrame(Xw, columns=[f"x{j}" for j in range(13)])
     nb3 = FrozenEstimator(GaussianNB().fit(Xw.iloc[::2], yw[::2]))
-    frame = spark.createDataFrame(Xw.iloc[1::2].assign(label=yw[1::2]))
-    with pytest.warns(BinnedFitWarning, match=r"the 89 held-out rows were fitted from their "
-                                              r"score tally .* because `clip` was given.*"
-                                              r"leave `clip` at None"):
-        CalibrationWrapper(nb3, method="platt", clip=1e-6).fit(frame, "label")
+    frame = spark.createDataFrame(Xw.iloc[1::2].assign(label=yw[1::2])).repartition(3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", BinnedFitWarning)
+        spk = CalibrationWrapper(nb3, method="platt", clip=1e-6).fit(frame, "label")
+    mem = CalibrationWrapper(nb3, method="platt", clip=1e-6).fit(Xw.iloc[1::2], yw[1::2])
+    np.testing.assert_allclose(spk.predict_proba(Xw), mem.predict_proba(Xw), rtol=0, atol=1e-12)
 
 
 # -- 3. monitor: one warning per condition for the whole table ---------------------------------

@@ -176,6 +176,12 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
         owner.clip_ = owner._clip_from_smallest(first.smallest)
     else:
         owner.clip_ = owner._choose_clip(np.empty((0, k)), np.empty(0))
+        if template is None:
+            # method="auto" with `clip` given or decision values: a small set is fitted as in
+            # memory from its rows (one pass brings them); a larger one is refused below
+            held = _small_set_rows(owner, rows, estimator, classes, sample_weight is not None)
+            if held is not None:
+                return held
     if template is None:
         raise ValueError(
             "method='auto' is not supported for multiclass Dask input beyond "
@@ -269,20 +275,20 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     if merged[0].total_weight <= 0:
         raise ValueError(ZERO_WEIGHT)
     if 0 < merged[0].n_rows <= kept_rows_limit():
-        # a small set reaches this path only when no first pass brought its rows (above)
+        # a small set whose first pass did not bring its rows (`clip` given, or decision
+        # values: there was none): one more pass, over at most KEPT_ROWS rows, brings them, and
+        # the map is the in-memory fit of the rows (before 4 December 2026, session 21: fitted
+        # from the one-vs-rest tallies with a BinnedFitWarning)
+        if owner.clip is not None or owner.response_ != "predict_proba":
+            held = _small_set_rows(owner, rows, estimator, classes, sample_weight is not None)
+            if held is not None:
+                return held
         from ._tally import warn_binned_small_set
 
         collect = ("collect the rows (frame.toPandas(), or compute() a Dask collection) and "
                    "fit in memory")
-        if owner.clip is not None:
-            reason, remedy = "`clip` was given", "leave `clip` at None, or " + collect
-        elif owner.response_ != "predict_proba":
-            reason, remedy = (
-                "the model's decision_function values are calibrated (the rows come to the "
-                "client only with predict_proba and clip=None)", collect)
-        else:
-            reason, remedy = ("the rows did not reach the client (on Spark: the frame's rows "
-                              "changed between passes)", "cache() the frame first, or " + collect)
+        reason, remedy = ("the rows did not reach the client (on Spark: the frame's rows "
+                          "changed between passes)", "cache() the frame first, or " + collect)
         warn_binned_small_set(type(owner).__name__, merged[0].n_rows, merged[0].resolution,
                               reason, remedy, stacklevel=6)
     # class j's tally has the rows of class j as its label 1
@@ -323,6 +329,16 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
         )
     owner.tally_ = list(merged)
     return maps
+
+
+def _small_set_rows(owner, rows, estimator, classes, weighted):
+    """The held-out predictions of a set of at most KEPT_ROWS rows from one pass that brings
+    them to the client (:func:`_first_pass_block`), or None for a larger set, or when the
+    rows did not arrive."""
+    first = rows.map_reduce(_first_pass_block, owner)
+    if first.arrays is not None and 0 < first.n <= kept_rows_limit():
+        return _small_set_heldout(owner, estimator, classes, first.arrays, weighted)
+    return None
 
 
 def _small_set_heldout(owner, estimator, classes, arrays, weighted):
