@@ -163,3 +163,41 @@ def test_multiclass_scoring_monitoring_and_costs_of_x_on_spark(spark, digits):
     got = got.toPandas().sort_values("row")
     np.testing.assert_array_equal(got["action"], local.predict(X_test))
     assert isinstance(got, pd.DataFrame) and "probability_9" in got.columns
+
+
+def test_multiclass_adapt_on_spark_warns_of_a_share_at_the_edge_as_in_memory(spark):
+    # scikit-learn's wine data, class 2 left out of the unlabelled rows: in memory adapt warns
+    # BoundaryPriorWarning ("the data point there firmly"); the Spark reductions warned nothing
+    # (the same code as Dask, tests/test_scale_multiclass.py). Now the same message.
+    import warnings
+
+    from sklearn.datasets import load_wine
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    from probwrap.shift import BoundaryPriorWarning
+
+    X, y = load_wine(return_X_y=True, as_frame=True)
+    idx = np.random.default_rng(0).permutation(len(y))
+    half = len(y) // 2
+    fitted = make_pipeline(StandardScaler(), LogisticRegression(C=0.05, max_iter=1000))
+    model = FrozenEstimator(fitted.fit(X.iloc[idx[:half]], y.iloc[idx[:half]]))
+    rest = idx[half:]
+    lab, new = rest[: rest.shape[0] // 2], rest[rest.shape[0] // 2:]
+    new = new[y.to_numpy()[new] != 2]
+    X_lab = X.iloc[lab].reset_index(drop=True)
+    y_lab = y.iloc[lab].to_numpy()
+    X_new = X.iloc[new].reset_index(drop=True)
+
+    def edge(fit):
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            w = fit()
+        return w, [str(m.message) for m in caught if issubclass(m.category, BoundaryPriorWarning)]
+
+    local, expected = edge(lambda: PriorShiftWrapper(model).fit(X_lab, y_lab).adapt(X_new))
+    remote, got = edge(lambda: PriorShiftWrapper(model).fit(
+        _frame(spark, X_lab.assign(label=y_lab)), "label").adapt(_frame(spark, X_new)))
+    assert len(expected) == 1 and "firmly" in expected[0]
+    assert got == expected  # was []
+    np.testing.assert_allclose(remote.target_prior_, local.target_prior_, atol=1e-8)
