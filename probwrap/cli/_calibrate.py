@@ -70,11 +70,26 @@ def add_scale_flag(parser: argparse.ArgumentParser, *, default: str | None = "pr
 
 
 def read_scores(frame: Any, column: str, path: str | Path, *, scale: str,
-                flag: str = "--score-column") -> np.ndarray:
-    """The score column as finite floats; probabilities must lie in [0, 1]."""
+                flag: str = "--score-column", verb: str | None = None) -> np.ndarray:
+    """The score column as finite floats; probabilities must lie in [0, 1].
+
+    Log-odds that all lie in [0, 1] (at least 10 rows, not all equal) are most likely
+    probabilities passed with ``--scale log-odds``: read as log-odds they are probabilities
+    from 0.5 to 0.73 only, so with ``verb`` a warning line says so (real log-odds can lie
+    there, so it is not an error).
+    """
     if scale == "proba":
         return probability_column(frame, column, path, flag=flag)
-    return numeric_column(frame, column, path, flag=flag)
+    values = numeric_column(frame, column, path, flag=flag)
+    if (verb is not None and values.shape[0] >= 10 and values.min() >= 0.0
+            and values.max() <= 1.0 and values.max() > values.min()):
+        lo, hi = float(values.min()), float(values.max())
+        warn_line(verb, (
+            f"{path}: every value of column {plain(column)!r} lies in [0, 1] ({lo:.3g} to "
+            f"{hi:.3g}), as probabilities do, but the scale is log-odds, which reads them as "
+            f"probabilities from {1 / (1 + np.exp(-lo)):.3g} to {1 / (1 + np.exp(-hi)):.3g} "
+            "only; if the column holds probabilities, use --scale proba"))
+    return values
 
 
 def report_warnings(verb: str, caught: list) -> None:
@@ -155,7 +170,8 @@ def _fit(args: argparse.Namespace) -> int:
         frame = read_table(args.scores, exact=[args.score_column, *(late_columns or []),
                                                 *([args.weight_column] if args.weight_column
                                                   else [])])
-        scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
+        scores = read_scores(frame, args.score_column, args.scores, scale=args.scale,
+                             verb="calibrate")
         given = read_weights(frame, args.weight_column, args.scores, "calibrate")
         late = weights = None
         if late_columns is None:
@@ -329,7 +345,8 @@ def _apply(args: argparse.Namespace) -> int:
         cal_map, description, scale = load_map(args.map, args.scale)
         # every column is written out as it was read: CSV columns as their text
         frame = read_table(args.scores, exact=[args.score_column], as_text=True)
-        scores = read_scores(frame, args.score_column, args.scores, scale=scale)
+        scores = read_scores(frame, args.score_column, args.scores, scale=scale,
+                             verb="calibrate")
         if args.output_column in frame.columns:
             raise DataError(
                 f"{args.scores}: already has a column {shown(args.output_column)}; choose another "

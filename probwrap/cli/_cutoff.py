@@ -391,7 +391,7 @@ def _run(args: argparse.Namespace) -> int:
         frame = read_table(args.scores, exact=[args.score_column, *(late_columns or []),
                                                 *([args.weight_column] if args.weight_column
                                                   else [])])
-        scores = read_scores(frame, args.score_column, args.scores, scale=args.scale)
+        scores = read_scores(frame, args.score_column, args.scores, scale=args.scale, verb="cutoff")
         given = read_weights(frame, args.weight_column, args.scores, "cutoff")
         if late_columns is None:
             y, labels = read_labels(

@@ -292,7 +292,7 @@ def _run(args: argparse.Namespace) -> int:
                                                      else [])],
                            text=([] if args.batch_column is None else [args.batch_column])
                            + ([] if args.cell_column is None else [args.cell_column]))
-        proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale)
+        proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale, verb="prevalence")
         weights = read_weights(frame, args.weight_column, args.unlabelled, "prevalence",
                                relative=True)
         ref_weights = None
@@ -331,7 +331,7 @@ def _run(args: argparse.Namespace) -> int:
             ref_scores = read_scores(
                 ref, ref_column, args.reference, scale=args.scale,
                 flag="--reference-score-column" if args.reference_score_column
-                else "--score-column",
+                else "--score-column", verb="prevalence",
             )
             if args.scale == "log-odds":
                 ref_scores = log_odds_to_proba(ref_scores)
@@ -372,7 +372,8 @@ def _run(args: argparse.Namespace) -> int:
                             c: np.ndarray | None) -> dict[str, Any]:
                         kw = {**settings, "seed": seed, "sample_weight": kish_scaled(w)}
                         if args.reference is None:
-                            return prevalence_from_source(p, args.source_prevalence, **kw)
+                            return prevalence_from_source(p, args.source_prevalence,
+                                                          edge_warning=False, **kw)
                         return prevalence_from_reference(
                             p, ref_scores, ref_y, method=args.method,
                             recalibrate=not args.no_recalibration, cells=c, **ref_settings,

@@ -41,6 +41,7 @@ def prevalence_from_source(
     confidence_level: float = 0.95,
     seed: int | None = 0,
     sample_weight: np.ndarray | None = None,
+    edge_warning: bool = True,
 ) -> dict[str, Any]:
     """EM prevalence of unlabelled rows whose probabilities hold for ``source_prevalence``.
 
@@ -49,6 +50,11 @@ def prevalence_from_source(
     labelled rows as Kish's effective size of ``sample_weight`` (as
     :meth:`probwrap.shift.PriorEstimator.estimate` does). Weights are relative: scaling them
     all changes nothing.
+
+    With ``edge_warning``, an estimate at the edge (within 1e-3 of the source prevalence's
+    distance to 0 or to 1, the rule of :class:`probwrap.shift.BoundaryPriorWarning`) warns with
+    the scores' own average beside it: EM reaches an edge both when the batch holds (nearly) no
+    row of a class and when the scores were not calibrated for ``source_prevalence``.
 
     Examples
     --------
@@ -66,7 +72,12 @@ def prevalence_from_source(
     p2 = two_columns(proba)
     src = np.array([1.0 - source_prevalence, source_prevalence])
     w = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
-    point = em_prior(p2, src, sample_weight=w)
+    with warnings.catch_warnings(record=True) as point_caught:
+        warnings.simplefilter("always")
+        point = em_prior(p2, src, sample_weight=w)
+    for caught_one in point_caught:  # passed on as raised
+        warnings.warn_explicit(caught_one.message, caught_one.category, caught_one.filename,
+                               caught_one.lineno)
     test = shift_test(p2, src, sample_weight=w)
     if not (np.all(np.isfinite(point.prior)) and np.isfinite(test.statistic)):
         raise ValueError(
@@ -74,6 +85,8 @@ def prevalence_from_source(
             "give a source prevalence the scores were really calibrated for"
         )
     out = result_dict(point.prior[1], point.converged, "em", proba.shape[0], source_prevalence, test)
+    if edge_warning and not point_caught:  # em_prior's own warning says it already
+        _warn_edge(float(point.prior[1]), source_prevalence, p2[:, 1], w)
     if n_resamples > 0:
         rng = check_random_state(seed)
         n = proba.shape[0]
@@ -97,6 +110,25 @@ def prevalence_from_source(
             float(min(lo, cp[0], point.prior[1])), float(max(hi, cp[1], point.prior[1]))
         ]
     return out
+
+
+def _warn_edge(estimate: float, source: float, p: np.ndarray, w: np.ndarray | None) -> None:
+    """Warn when EM's prevalence sits at 0 or 1 (see :func:`prevalence_from_source`)."""
+    from probwrap.shift import BoundaryPriorWarning
+
+    if not (estimate <= 1e-3 * source or estimate >= 1.0 - 1e-3 * (1.0 - source)):
+        return
+    mean = float(np.average(p, weights=w))
+    side = "1 (every row positive)" if estimate > 0.5 else "0 (no row positive)"
+    warnings.warn(
+        f"the estimated prevalence is at the edge, {side}: EM goes there when the batch holds "
+        f"(nearly) only one class, and also when the scores were not calibrated for the source "
+        f"prevalence given ({source:.4g}); the scores' own average here is {mean:.4g}. If that "
+        "average is far from the estimate, check --source-prevalence, or give --reference with "
+        "labelled held-out scores of the same model so that the scores are recalibrated",
+        BoundaryPriorWarning,
+        stacklevel=2,
+    )
 
 
 def prevalence_from_reference(

@@ -505,7 +505,7 @@ def _handler(args: argparse.Namespace) -> int:
                                                *([args.weight_column] if args.weight_column
                                                  else [])],
                            text=_text_columns(args))
-        p = read_scores(frame, args.score_column, args.scores, scale=args.scale)
+        p = read_scores(frame, args.score_column, args.scores, scale=args.scale, verb="report")
         given = read_weights(frame, args.weight_column, args.scores, "report")
         late = None
         if late_columns is None:
