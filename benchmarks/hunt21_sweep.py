@@ -30,9 +30,11 @@ of ``own`` and ``sig``, intervals that miss by more than 0.1, and estimates at 0
 warning.
 
 Run: ``nice python benchmarks/hunt21_sweep.py --quick`` (three sets, two models, two halves; a
-minute), ``nice python benchmarks/hunt21_sweep.py`` (every set, four models, 6 halves; about
-an hour on a busy machine), ``--sets nodal,cats`` to pick sets, ``--models lr,rf``,
-``--seeds N``, ``--list`` to print the tasks.
+minute), ``nice python benchmarks/hunt21_sweep.py --models lr,rf,nb --seeds 5`` (the table of
+``docs/small_data.md``, twenty-first session: every set, 360 cells; about 40 minutes on a busy
+machine; without ``--models`` the unpruned tree is added, 6 halves by default),
+``--sets nodal,cats`` to pick sets, ``--csv FILE`` to keep every cell, ``--list`` to print the
+tasks.
 """
 
 from __future__ import annotations
@@ -418,7 +420,9 @@ def summarise(rec: Rec) -> pd.DataFrame:
             d = df.dropna(subset=[f"est{f}"])
             cover = ((d[f"lo{f}"] <= d[f"truth{f}"]) & (d[f"truth{f}"] <= d[f"hi{f}"])).mean()
             err = (d[f"est{f}"] - d[f"truth{f}"]).abs().mean()
-            print(f"prior x{f}: {len(d)} batches, interval covers {cover:.3f}, mean |estimate - truth| {err:.3f}")
+            gain = float(np.exp(np.mean(np.log(d[f"ll_adapt{f}"] / d[f"ll_before{f}"]))))
+            print(f"prior x{f}: {len(d)} batches, interval covers {cover:.3f}, mean |estimate - truth| "
+                  f"{err:.3f}, log loss after adapt over before {gain:.3f}")
     return df
 
 
