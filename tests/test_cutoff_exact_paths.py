@@ -260,3 +260,35 @@ def test_no_interval_asked_for_reads_as_none(forty, tally_path):
         assert memory.cutoff_interval_ is None and tallied.cutoff_interval_ is None
         content, html = build_report(model=memory, X=X, y=y, n_resamples=30)
     assert content.cost_interval is None and 'id="cutoff-interval"' not in html
+
+
+def test_cli_text_notes_an_exact_range_below_zero(capsys, tmp_path):
+    """A forest's exact-zero scores: when only the exact range reaches below 0 (acting on every
+    row is not shown dearer), the text still says what a cutoff below 0 does, and the Bayes
+    cutoff's cost lines up with the other costs (breast cancer, 2 columns, 30 rows to fit a
+    10-tree forest, 40 held-out rows; false negatives cost 10)."""
+    from sklearn.ensemble import RandomForestClassifier
+
+    X, y = load_breast_cancer(return_X_y=True)
+    y = 1 - y
+    idx = np.random.default_rng(4).permutation(y.shape[0])
+    train, held = idx[:30], idx[300:340]
+    forest = RandomForestClassifier(n_estimators=10, random_state=0).fit(X[train, :2], y[train])
+    p = forest.predict_proba(X[held, :2])[:, 1]
+    assert (p == 0).sum() >= 5  # the case: many rows scored exactly 0
+    path = tmp_path / "forest.csv"
+    pd.DataFrame({"p": p, "y": y[held]}).to_csv(path, index=False, float_format="%.17g")
+    args = ["cutoff", "--scores", path, "--score-column", "p", "--label-column", "y",
+            "--cost-fp", 1, "--cost-fn", 10, "--resamples", 40]
+    got = json.loads(_cli(capsys, *args, "--format", "json")[0])
+    # only the exact range reaches below 0 here: the cutoff and the bootstrap interval do not
+    assert got["cutoff_exact_range"][0] < 0 <= min(got["cutoff"], got["cutoff_interval"][0])
+    text = _cli(capsys, *args)[0]
+    assert "a cutoff below 0 acts on every row" in text
+    lines = text.splitlines()
+    half = next(t for t in lines if t.startswith("  at cutoff 0.5 "))
+    bayes = next(t for t in lines if t.startswith("  at Bayes cutoff "))
+    value_at = len(half) - len(half[len("  at cutoff 0.5"):].lstrip())
+    assert bayes[value_at - 1] == " " and bayes[value_at] != " ", (half, bayes)
+    assert f"(cutoff {got['bayes_cutoff']:.4g}; " in bayes  # fp / (fp + fn) = 1 / 11
+    assert got["bayes_cutoff"] == pytest.approx(1 / 11)

@@ -335,9 +335,10 @@ def _text(out: dict[str, Any], path: str) -> str:
     ]
     if out["cost_flag_all"] is not None:
         lines.append(f"  acting on every row   {out['cost_flag_all']:.6g}")
-    ci = out["cutoff_interval"]
+    ci, exact = out["cutoff_interval"], out.get("cutoff_exact_range")
     if out["score_scale"] == "proba" and min(
-            [out["cutoff"]] + ([] if ci is None else [ci[0]])) < 0:
+            [out["cutoff"]] + ([] if ci is None else [ci[0]])
+            + ([] if exact is None else [exact[0]])) < 0:
         # rows scored exactly 0 (a forest) are acted on only by a cutoff below 0
         lines.append("  (a cutoff below 0 acts on every row, including rows scored exactly 0)")
     g = out.get("guarantee")
@@ -363,8 +364,8 @@ def _text(out: dict[str, Any], path: str) -> str:
         lines.append(f"  at cutoff 0.5         {cost(out['cost_at_half'])}")
         if bayes is not None:
             lines.append(
-                f"  at Bayes cutoff {bayes:.4g}  {cost(out['cost_at_bayes_cutoff'])}   "
-                "(right for calibrated probabilities)"
+                f"  at Bayes cutoff       {cost(out['cost_at_bayes_cutoff'])}   "
+                f"(cutoff {bayes:.4g}; right for calibrated probabilities)"
             )
         kept = out.get("settled_cutoff")
         if kept is not None:

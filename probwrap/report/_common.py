@@ -140,7 +140,10 @@ class NoteLog:
                 seen[k] = [str(w.message), 1]
         for (category, _), (message, count) in seen.items():
             self.add(key, about, category.__name__, message, count)
-            more = f" ({count} warnings of this kind; the first is shown)" if count > 1 else ""
+            # the count is of times the warning was raised, not of rows: a bootstrap meets the
+            # same row in many of its resamples
+            more = (f" (raised {count} times in this computation (a bootstrap raises it in "
+                    f"each resample that meets it), the first shown)" if count > 1 else "")
             warnings.warn(f"report, {about}: {message}{more}", category, stacklevel=3)
         if failure is not None:
             self.add(key, about, "not computed", failure)

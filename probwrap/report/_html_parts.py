@@ -74,13 +74,19 @@ def _figure(fig_id: str, svg: str, caption: str, notes: Any = ()) -> str:
     )
 
 
+def _times(count: int) -> str:
+    return (f", raised {count} times in this computation (a bootstrap raises it in each "
+            f"resample that meets it), the first shown" if count > 1 else "")
+
+
 def notes_box(notes: Any, box_id: str, title: str = "Notes") -> str:
     """A "notes" box listing warnings met while computing the numbers beside it (or nothing)."""
     if not notes:
         return ""
+    # a count is of times raised, not of rows (a bootstrap meets one row in many resamples)
     items = "".join(
         f'<li data-note="{_text(n.key)}" data-kind="{_text(n.kind)}"><b>{_text(n.about)}</b> '
-        f"({_text(n.kind)}{f', {n.count} times, the first shown' if n.count > 1 else ''}): "
+        f"({_text(n.kind)}{_times(n.count)}): "
         f"{_text(n.message)}"
         "</li>"
         for n in notes
