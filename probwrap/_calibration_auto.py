@@ -13,12 +13,12 @@ from sklearn.utils import check_random_state
 
 from ._heldout import HeldOutPredictions, keep_cells_together
 from ._validation import plain
-from .calibration._base import CalibrationMap, WeightScaleWarning
+from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
 from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
 from .calibration._identity import IdentityMap
 from .calibration._isotonic import IsotonicMap
-from .calibration._platt import PlattMap
+from .calibration._platt import PlattMap, smoothed_binary_targets
 from .calibration._temperature import TemperatureMap
 from .calibration._vector_scaling import MatrixScalingMap, VectorScalingMap
 from .calibration._venn_abers import VennAbersMap
@@ -153,6 +153,22 @@ _PLATT_FIRST_MAX_MINORITY_SHARE = 0.20
 #: (measured on the real-data sweep's 3-class diabetes set and benchmarks/calibration.py, see
 #: docs/calibration.md).
 _ONE_VS_REST_MIN_CLASS_ROWS = 8
+
+#: The name under which ``method="auto"`` scores, for a binary model, the class shares (the
+#: intercept-only map: every row gets the share of the positive class among the rows it is
+#: fitted on, with Platt's smoothed targets) beside the candidate maps. Not a method of its own
+#: and never chosen by the one-standard-error rule: it replaces the chosen map only when it
+#: beats every eligible candidate by more than that candidate's standard error (see
+#: ``_AutoChoice._class_shares_beat_every_map``); the model's scores then carry no ranking that
+#: holds out of fold on these rows. lifelines' waltons (naive Bayes on two columns, 81 rows,
+#: fold models whose held-out probabilities point opposite ways): every map scored 0.57-0.70
+#: against the class shares' 0.51 and ``auto`` kept a temperature (test log loss 1.93 times
+#: scikit-learn's sigmoid; docs/small_data.md, twenty-first session).
+CLASS_SHARES = "class_shares"
+
+#: ... by more than this many standard errors of the paired difference (0: lower than every
+#: eligible map's; ``inf`` switches the class shares off).
+_CLASS_SHARES_MARGIN_SE = 1.0
 
 #: Probabilities are floored at this value when scoring candidate maps by log loss, so that a map
 #: that predicts an exact 0 for an event that happens is heavily penalised but stays finite.
@@ -404,6 +420,33 @@ class _AutoChoice:
             out[name] = (st["per_row"], st["boundary"])
         return out
 
+    @staticmethod
+    def _class_share(y01: np.ndarray, w: np.ndarray) -> float:
+        """The intercept-only map's probability of the positive class: the weighted mean of
+        Platt's (1999) smoothed targets on rows ``y01`` (1 for the positive class), weights on
+        the count scale, as ``PlattMap`` holds a level (``PlattMap._hold_level``)."""
+        wc = count_weights(np.asarray(w, dtype=float))[0]
+        t = smoothed_binary_targets(np.asarray(y01, dtype=float), wc)
+        return float(np.clip((wc @ t) / wc.sum(), 1e-300, 1.0 - 1e-16))
+
+    def _class_shares_losses(self, y, w, fold_masks) -> np.ndarray:
+        """Out-of-fold log loss per row of the class shares fitted on each fold's other rows."""
+        out = np.empty(y.shape[0])
+        for _, test in fold_masks:
+            share = self._class_share(y[~test] == 1, w[~test])
+            yt = y[test] == 1
+            out[test] = -np.where(yt, np.log(share), np.log1p(-share))
+        return out
+
+    @staticmethod
+    def _class_shares_beat_every_map(margins: dict[str, tuple[float, float]]) -> bool:
+        """True when, for every eligible candidate, ``margins[name] = (d, se)`` has its
+        cross-validated log loss above the class shares' by ``d`` > ``se``, the standard error
+        of the paired per-row difference: the one-standard-error rule read the other way (a
+        map is kept unless the constant is better beyond the folds' noise)."""
+        k = _CLASS_SHARES_MARGIN_SE
+        return bool(margins) and all(d > k * se for d, se in margins.values())
+
     def _choose(self, ho: HeldOutPredictions, scores: np.ndarray, w: np.ndarray):
         """Pick a map by cross-validated log loss (one-standard-error rule).
 
@@ -496,20 +539,37 @@ class _AutoChoice:
                 UserWarning,
                 stacklevel=3,
             )
+        if binary and losses:
+            # the class shares, scored on the same folds (a reference, see CLASS_SHARES)
+            losses[CLASS_SHARES] = self._class_shares_losses(y, w, fold_masks)
         wn = w / w.sum()
         # Kish's effective sample size: the standard error does not depend on the weights' scale
         n_eff = float(w.sum() ** 2 / (w @ w))
         means = {name: float(wn @ loss) for name, loss in losses.items()}
         scores_out: dict[str, tuple[float, float]] = {}
+
+        def paired_se(a: np.ndarray, b: np.ndarray) -> float:
+            d = a - b
+            dbar = float(wn @ d)
+            var = float(wn @ (d - dbar) ** 2) * n_eff / max(n_eff - 1.0, 1.0)
+            return float(np.sqrt(var / n_eff))
+
         if eligible:
             best = min(eligible, key=means.get)
             for name, loss in losses.items():
-                d = loss - losses[best]
-                dbar = float(wn @ d)
-                var = float(wn @ (d - dbar) ** 2) * n_eff / max(n_eff - 1.0, 1.0)
-                scores_out[name] = (means[name], float(np.sqrt(var / n_eff)))
+                scores_out[name] = (means[name], paired_se(loss, losses[best]))
         else:
             scores_out = {name: (means[name], float("nan")) for name in losses}
+        if CLASS_SHARES in losses and eligible:
+            margins = {nm: (means[nm] - means[CLASS_SHARES],
+                            paired_se(losses[nm], losses[CLASS_SHARES])) for nm in eligible}
+            if self._class_shares_beat_every_map(margins):
+                if ho.n_folds == 0:
+                    # a frozen model: the rows scored are its own scores, which predict
+                    return self._choose_class_shares(margins, means, y, w, scores_out, notes)
+                # cross-fitted: the fold models failed, but the model refitted on all rows
+                # predicts and may rank (measured: docs/calibration.md); the map is kept, warned
+                self._warn_fold_models_rank_nothing(margins, means, notes)
         minority = (float(np.bincount(y, weights=w, minlength=2).min() / w.sum())
                     if binary else 0.5)
         platt_first = binary and (
@@ -531,3 +591,51 @@ class _AutoChoice:
         warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
         notes.setdefault(fallback, "chosen as the fallback: no candidate was eligible")
         return fallback, scores_out, notes
+
+    @staticmethod
+    def _no_ranking_reason(margins, means) -> str:
+        best = min(margins, key=means.get)
+        d, se = margins[best]
+        return (
+            "every candidate map scores a cross-validated log loss above the class shares' "
+            f"{means[CLASS_SHARES]:.3g} by more than the standard error of the difference "
+            f"(the lowest, {plain(best)!r}, {means[best]:.3g}: {d:.3g} above, standard error "
+            f"{se:.3g})"
+        )
+
+    def _warn_fold_models_rank_nothing(self, margins, means, notes) -> None:
+        """Cross-fitted: the class shares beat every map on the fold models' held-out scores.
+        The map is still chosen among the candidates (the refitted model predicts); warns, and
+        says so in ``method_notes_["class_shares"]``."""
+        reason = (
+            self._no_ranking_reason(margins, means)
+            + ", so the fold models' held-out scores carry no ranking that holds from fold to "
+            "fold on these rows; the map is still chosen among the candidates, for the model "
+            "refitted on all rows, whose ranking these rows cannot check"
+        )
+        notes[CLASS_SHARES] = "not used: " + reason
+        warnings.warn(
+            f"CalibrationWrapper(method='auto'): {reason}. Check the model on more labelled "
+            "rows (or pass a model fitted elsewhere inside sklearn.frozen.FrozenEstimator).",
+            UserWarning,
+            stacklevel=4,
+        )
+
+    def _choose_class_shares(self, margins, means, y, w, scores_out, notes):
+        """``_choose``'s return when the class shares beat every eligible map on a frozen
+        model's scores: warns, and notes the margins in ``method_notes_["class_shares"]``."""
+        share = self._class_share(y == 1, w)
+        reason = (
+            self._no_ranking_reason(margins, means)
+            + ", so the model's scores carry no ranking that holds from fold to fold on these "
+            "rows"
+        )
+        notes[CLASS_SHARES] = "chosen: " + reason
+        warnings.warn(
+            f"CalibrationWrapper(method='auto'): {reason}; every row gets the class share, "
+            f"probability {share:.3g} for class {plain(self.classes_[1])!r}. Check the model "
+            "(and its folds) on more labelled rows.",
+            UserWarning,
+            stacklevel=4,
+        )
+        return CLASS_SHARES, scores_out, notes

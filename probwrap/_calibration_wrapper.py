@@ -13,7 +13,7 @@ from sklearn.base import clone
 from sklearn.utils import _safe_indexing, indexable
 from sklearn.utils.metaestimators import available_if
 
-from ._calibration_auto import CALIBRATION_METHODS, _AutoChoice, _boundary_of
+from ._calibration_auto import CALIBRATION_METHODS, CLASS_SHARES, _AutoChoice, _boundary_of
 from ._heldout import (
     HeldOutClassifierBase,
     _is_dask,
@@ -259,12 +259,18 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         their calibrated values); with decision values it is the map fitted on the pooled
         one-vs-rest rows of the other classes. A warning names such classes.
     method_ : str
-        Name of the map in use.
+        Name of the map in use; with ``"auto"`` also ``"class_shares"``: a frozen binary model
+        whose every candidate map scored a cross-validated log loss above the class shares'
+        by more than its standard error gets the class shares (``calibrator_`` a
+        :class:`~probwrap.calibration.PlattMap` held at slope 0: every row the mean of Platt's
+        smoothed targets), with a warning.
     method_scores_ : dict
         ``"auto"`` only: cross-validated log loss of every candidate that could be scored, with
         the standard error of its difference from the best eligible one, as
-        ``method_scores_[name] = (loss, se)``. Empty when there were too few rows of a class
-        to cross-validate.
+        ``method_scores_[name] = (loss, se)``; for two classes also ``"class_shares"``, the
+        intercept-only map scored on the same folds as the reference every map is measured
+        against (not a candidate of the one-standard-error rule). Empty when there were too
+        few rows of a class to cross-validate.
     method_notes_ : dict
         ``"auto"`` only: ``method_notes_[name]`` says why a candidate was not eligible (its fit
         reached a boundary: a temperature at the end of its range, a beta or isotonic fit to
@@ -274,7 +280,10 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         sample of the rows (above 20,000 held-out rows); ``method_notes_["temperature"]`` /
         ``["vector_scaling"]`` say when a sharpening temperature was capped at 1 or vector
         scaling replaced by temperature scaling, the fold models' scores being near-constant
-        beside the refit's (docs/calibration.md).
+        beside the refit's (docs/calibration.md); ``method_notes_["class_shares"]`` says when
+        the class shares beat every candidate map beyond a standard error: ``"chosen: ..."``
+        (frozen model) or ``"not used: ..."`` (cross-fitted: the refitted model predicts
+        through the map chosen, with a warning).
     clip_ : float
         The ``clip`` in use (chosen from the held-out probabilities when ``clip=None``).
     response_ : str
@@ -408,11 +417,13 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             template = self.method
         elif self.method == "auto":
             self.method_, self.method_scores_, self.method_notes_ = self._choose(ho, scores, w)
-            template = CALIBRATION_METHODS[self.method_]()
+            template = CALIBRATION_METHODS.get(self.method_, PlattMap)()
         else:
             self.method_ = self.method
             template = CALIBRATION_METHODS[self.method]()
-        if self.method == "auto":
+        if self.method == "auto" and self.method_ == CLASS_SHARES:
+            self.calibrator_ = self._class_shares_map(scores, ho.y_index, w)
+        elif self.method == "auto":
             self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
         else:
             self._warn_few_class_rows(ho.class_row_counts(w))
@@ -448,6 +459,18 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         self._map_rows = (scores, w)  # for _cap_level_sharpening after the predicting models
         self._warn_reversed(len(ho.y_index))
         return self
+
+    def _class_shares_map(self, scores: np.ndarray, y_index: np.ndarray,
+                          w: np.ndarray) -> PlattMap:
+        """``method="auto"``'s class shares (binary): a Platt map fitted on the held-out rows
+        and then held at its level (slope 0, intercept the logit of the weighted mean of
+        Platt's smoothed targets, ``PlattMap._hold_level``), so every row gets the class share;
+        saved and applied as any Platt map."""
+        m = self._fit_map(PlattMap(), scores, y_index, w)
+        m.__dict__.pop("_reversed_slope", None)  # the class shares' own warning says why
+        m._hold_level(np.asarray(y_index) == 1, w)
+        m.boundary_ = None
+        return m
 
     def _cap_level_sharpening(self, scores: np.ndarray, ho: Any, w: np.ndarray) -> None:
         """``method="auto"``, two classes, cross-fitted: a temperature that sharpens (``T < 1``)

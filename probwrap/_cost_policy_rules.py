@@ -122,6 +122,10 @@ def recalibrated_plugin_cutoff(p, y, w, t0: float, random_state: Any) -> tuple[f
         return t0, None
     if cw.method_ == "identity":
         return t0, "identity"
+    if cw.method_ == "class_shares":
+        # the scores showed no ranking that holds out of fold: a constant map orders no
+        # cutoff, so it is no anchor (the plug-in cutoff stays)
+        return t0, None
     if np.any(np.diff(q) < -1e-12):
         return t0, None
     j = int(np.searchsorted(q, t0, side="right"))  # first distinct held-out value mapped above t0

@@ -138,11 +138,14 @@ def test_auto_records_scores_and_prefers_simple_maps_on_small_data(frozen_cancer
     model = CalibrationWrapper(FrozenEstimator(base), method="auto", random_state=0).fit(X, y)
     six = {"temperature", "platt", "beta", "binning", "isotonic", "venn_abers"}
     # every candidate is scored, or its note says why not (e.g. left out after the first fold)
-    assert set(model.method_scores_) | set(model.method_notes_) == six
+    # (and, for two classes, the class shares as the reference every map is measured against)
+    maps = set(model.method_scores_) - {"class_shares"}
+    assert "class_shares" in model.method_scores_
+    assert maps | set(model.method_notes_) == six
     assert all(
-        "left out after fold" in model.method_notes_[nm] for nm in six - set(model.method_scores_)
+        "left out after fold" in model.method_notes_[nm] for nm in six - maps
     )
-    best = min(v[0] for v in model.method_scores_.values())
+    best = min(model.method_scores_[nm][0] for nm in maps)
     chosen_loss, _ = model.method_scores_[model.method_]
     # one-standard-error rule (Breiman et al. 1984, common practice): within one SE of the best
     se_chosen = model.method_scores_[model.method_][1]
@@ -298,7 +301,7 @@ def test_auto_leaves_venn_abers_out_on_large_heldout_sets():
     ).fit(X, y)
     # 22,000 rows: scored on a sample of 20,000 (method_notes_["auto"] says so)
     assert "sample of 20000 of 22000 rows" in chosen.method_notes_["auto"]
-    assert (set(chosen.method_scores_) | set(chosen.method_notes_)) - {"auto"} == {
+    assert (set(chosen.method_scores_) | set(chosen.method_notes_)) - {"auto", "class_shares"} == {
         "platt",
         "venn_abers",
     }

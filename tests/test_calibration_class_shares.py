@@ -1,0 +1,107 @@
+"""``CalibrationWrapper(method="auto")`` against the class shares (the intercept-only map).
+
+Two classes: ``auto`` scores the class shares on the same folds as its candidate maps
+(``method_scores_["class_shares"]``). A frozen model whose candidate maps all score a
+cross-validated log loss above the class shares' by more than the standard error of the
+difference gets the class shares, with a warning; a cross-fitted model keeps its map (the model
+refitted on all rows predicts and may still rank), also with a warning.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+from sklearn.calibration import CalibratedClassifierCV
+from sklearn.datasets import load_digits
+from sklearn.ensemble import RandomForestClassifier
+from sklearn.frozen import FrozenEstimator
+from sklearn.metrics import log_loss
+from sklearn.model_selection import KFold
+from sklearn.naive_bayes import GaussianNB
+
+import probwrap._calibration_auto as auto_module
+from probwrap import CalibrationWrapper
+
+sm = pytest.importorskip("statsmodels.api")
+
+
+def _engel_forest():
+    """statsmodels' engel: the top quarter of the food share from income alone; a forest
+    fitted on 60 households, 40 to calibrate, 135 to test (draw 15)."""
+    d = sm.datasets.engel.load_pandas().data
+    share = d["foodexp"] / d["income"]
+    X = d[["income"]].to_numpy(float)
+    y = (share > np.quantile(share, 0.75)).astype(int).to_numpy()
+    idx = np.random.default_rng(15).permutation(len(y))
+    fit, cal, test = idx[:60], idx[60:100], idx[100:]
+    model = RandomForestClassifier(n_estimators=50, random_state=0).fit(X[fit], y[fit])
+    return model, X[cal], y[cal], X[test], y[test]
+
+
+def test_frozen_model_without_ranking_gets_the_class_shares(monkeypatch):
+    model, Xc, yc, Xt, yt = _engel_forest()
+    with pytest.warns(UserWarning, match="every row gets the class share"):
+        cw = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc, yc)
+    assert cw.method_ == "class_shares"
+    assert cw.method_notes_["class_shares"].startswith("chosen: every candidate map")
+    loss_c, _ = cw.method_scores_["class_shares"]
+    # every eligible map scored above the class shares (by more than a standard error)
+    assert all(v[0] > loss_c for nm, v in cw.method_scores_.items() if nm != "class_shares")
+    # every row gets the mean of Platt's (1999) smoothed targets, (N+ + 1) / (N+ + 2) for the
+    # positives and 1 / (N- + 2) for the negatives
+    n1, n0 = int(yc.sum()), int((1 - yc).sum())
+    share = (n1 * (n1 + 1) / (n1 + 2) + n0 / (n0 + 2)) / (n1 + n0)
+    proba = cw.predict_proba(Xt)
+    np.testing.assert_allclose(proba[:, 1], share, rtol=1e-12)
+    ours = log_loss(yt, proba[:, 1])
+    # scikit-learn's sigmoid on the same frozen model and rows (the outside reference)
+    sigmoid = CalibratedClassifierCV(FrozenEstimator(model), method="sigmoid", cv=KFold(2))
+    sk = log_loss(yt, sigmoid.fit(Xc, yc).predict_proba(Xt)[:, 1])
+    assert ours < 1.02 * sk  # 0.538 against 0.534
+    # the map chosen without the class shares (the rule off) did harm: temperature, 0.629
+    monkeypatch.setattr(auto_module, "_CLASS_SHARES_MARGIN_SE", float("inf"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        before = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc, yc)
+    assert before.method_ != "class_shares"
+    assert log_loss(yt, before.predict_proba(Xt)[:, 1]) > 1.15 * sk
+
+
+def test_class_shares_choice_does_not_move_with_the_weights_scale():
+    model, Xc, yc, Xt, _ = _engel_forest()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        a = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc, yc)
+        b = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(
+            Xc, yc, sample_weight=np.full(len(yc), 1.0 / len(yc)))
+    assert a.method_ == b.method_ == "class_shares"
+    np.testing.assert_allclose(a.predict_proba(Xt), b.predict_proba(Xt), rtol=1e-12)
+
+
+def test_cross_fitted_fold_models_that_rank_nothing_warn_and_keep_the_map():
+    # scikit-learn's digits, "is it an 8" from the two first pixel columns (3 distinct rows
+    # among 80): naive Bayes fold models whose held-out scores point opposite ways; every map
+    # scores far above the class shares on the folds (Platt 0.70 against 0.38)
+    X, y = load_digits(return_X_y=True)
+    y = (y == 8).astype(int)
+    rows = np.random.default_rng(1).permutation(len(y))[:80]
+    with pytest.warns(UserWarning, match="carry no ranking that holds from fold to fold"):
+        cw = CalibrationWrapper(GaussianNB(), random_state=0).fit(X[rows][:, :2], y[rows])
+    assert cw.method_ != "class_shares"  # the refitted model predicts through a map
+    assert cw.method_notes_["class_shares"].startswith("not used: every candidate map")
+    loss_c, _ = cw.method_scores_["class_shares"]
+    assert loss_c == pytest.approx(0.377, abs=5e-4)
+    assert all(v[0] > loss_c + 0.2 for nm, v in cw.method_scores_.items() if nm != "class_shares")
+
+
+def test_multiclass_has_no_class_shares_entry():
+    X, y = load_digits(return_X_y=True)
+    rows = np.isin(y, [0, 1, 2])
+    X, y = X[rows][:150], y[rows][:150]
+    model = GaussianNB().fit(X[:75], y[:75])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        cw = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(X[75:], y[75:])
+    assert "class_shares" not in cw.method_scores_
