@@ -137,7 +137,9 @@ class FewLabelledRowsWarning(UserWarning):
     """The interval of the class priors rests on fewer than ``FEW_LABELLED_ROWS`` (100)
     effective labelled rows.
 
-    The interval carries the labelled rows' sampling error (with a small-sample step for more
+    The count is Kish's effective size of the labelled rows; with ``cells`` given to ``fit``, it
+    is their design-effective count ``n_source_design_rows_`` (Kish's size over the cells'
+    design effect on the mean score). The interval carries the labelled rows' sampling error (with a small-sample step for more
     than two classes), but the calibration and source shares behind it are fitted to those few
     rows, and an error of the calibration map there (misfit or finite-sample bias) is not in the
     interval and cannot be seen on so few rows. Measured in ``benchmarks/shift.py

@@ -727,11 +727,15 @@ class PriorEstimator(_Resampling):
         # at most the labels' own (_cell_floor_rows), so the floor stays below the cells' error
         n_floor = n_eff if cell_t is None else max(n_eff, _cell_floor_rows(p, w, cell_t))
         if self.n_resamples > 0 and interval:
-            # with cells, the labelled cells count as units too (151 star98 districts are
-            # 23.5 rows by Kish's size of their pupils' counts)
-            cells_src = getattr(self, "n_source_cells_", None)
-            self._warn_few_labelled(n_src if cells_src is None or n_src is None
-                                    else max(n_src, float(cells_src)))
+            # with cells, the labelled rows' design-effective count: Kish's count over the
+            # cells' design effect on the mean score (cell_design_rows), the count the
+            # unlabelled side's shrinkage weighs too (half of star98's districts, 151, under a
+            # logistic regression on four covariates: 12.8, where their pupils' counts are 23.5
+            # rows by Kish's size; the older count, the larger of Kish's and the cells', was 151)
+            self._warn_few_labelled(
+                n_src if getattr(self, "_src_cells", None) is None
+                else getattr(self, "n_source_design_rows_", n_src),
+                design=getattr(self, "_src_cells", None) is not None)
             source = self._source_rows()
             if not point.identified:
                 bounds = np.column_stack([np.zeros(k), np.ones(k)])
@@ -1046,14 +1050,16 @@ class PriorEstimator(_Resampling):
         )
         return widened, ml_bounds
 
-    def _warn_few_labelled(self, n_src: float | None) -> None:
+    def _warn_few_labelled(self, n_src: float | None, *, design: bool = False) -> None:
         """Warn when the interval rests on fewer than ``FEW_LABELLED_ROWS`` effective labelled
-        rows (see :class:`FewLabelledRowsWarning` for what was measured there)."""
+        rows (see :class:`FewLabelledRowsWarning` for what was measured there); ``design``:
+        ``n_src`` is the cells' design-effective count (``n_source_design_rows_``)."""
         if n_src is None or not n_src < FEW_LABELLED_ROWS:
             return
         warnings.warn(
             f"The interval of the class priors rests on {n_src:.3g} effective labelled rows "
-            f"(fewer than {FEW_LABELLED_ROWS}): the calibration and the source shares it "
+            + ("(Kish's count over the labelled cells' design effect; " if design else "(")
+            + f"fewer than {FEW_LABELLED_ROWS}): the calibration and the source shares it "
             "carries are fitted to them, and an error of that calibration, which so few rows "
             "cannot reveal, moves the estimate beyond the interval's allowance. On resampled "
             "real data with 30-60 labelled rows the nominal 90 % interval covered 84-92 % of "
