@@ -216,7 +216,9 @@ def write_report(
         with identical forecasts and different labels only earn a note asking for ``cells``.
         False: always rows. The page says which unit was resampled and, for binary outcomes
         with whole-number weights, the cells' Pearson dispersion (a note when it is well above
-        1). In ``content.resampling``.
+        1). In ``content.resampling``. The report's own prevalence (class shares) estimate
+        fits its :class:`~probwrap.shift.PriorEstimator` with the same cells, so its shift test
+        and interval count the labelled cells as units (``content.prevalence_cells``).
     score_scale : {"proba", "log-odds"}, default="proba"
         What ``y_prob`` and ``unlabelled_prob`` hold (binary reports with ``y_true``/``y_prob``):
         probabilities, or log-odds (any finite number, e.g. ``decision_function`` values). The

@@ -350,6 +350,24 @@ def unit_words(unit: ResamplingUnit | None) -> str:
     return words
 
 
+def prevalence_unit_words(content: Any) -> str:
+    """What the prevalence (class shares) interval and shift test counted as units, in words
+    for the page (plain text): the labelled cells, or the labelled rows as independent where
+    the report's own bootstrap resampled cells (a ``prior_shift`` fitted without ``cells``);
+    empty where both counted rows."""
+    n = getattr(content, "prevalence_cells", None)
+    if n is not None:
+        return (f"The interval and the shift test count the labelled rows' {n} cells as the "
+                "units of the labelled side (the rows of a cell are not independent), as the "
+                "bootstrap intervals do; the unlabelled rows count as independent rows.")
+    unit = getattr(content, "resampling", None)
+    if unit is not None and unit.groups is not None:
+        return ("The interval and the shift test come from the given prior-shift wrapper, "
+                "fitted without cells: they count the labelled rows as independent, so they "
+                "are too narrow if the rows of a cell share causes (pass the cells to its fit).")
+    return ""
+
+
 def bin_dispersion(unit: ResamplingUnit | None) -> float:
     """What a reliability bin's trial count is divided by: ``max(1, phi)`` for cells.
 

@@ -134,6 +134,9 @@ class ReportContent:
     #: what every bootstrap interval resampled: rows, or whole cells of aggregated counts
     #: (:class:`~probwrap.report._cells.ResamplingUnit`, with the cells' dispersion)
     resampling: Any = None
+    #: the labelled cells the prevalence interval and shift test counted as units (None: the
+    #: labelled rows were counted as independent); see :func:`._cells.prevalence_unit_words`
+    prevalence_cells: int | None = None
 
 
 def _inner_chain(model: Any) -> list[Any]:
@@ -500,6 +503,8 @@ def collect_content(
                             getattr(prior_shift, "prior_strength", None))
         content.applied_prevalence = float(prior_shift.applied_prior_[1])
         content.adaptation_weight = float(prior_shift.adaptation_weight_)
+        content.prevalence_cells = getattr(
+            getattr(prior_shift, "prior_estimator_", None), "n_source_cells_", None)
         if X_unlabelled is not None and batch_size is not None:
             step("prevalence by batch", 3)
             content.batch_table = notes.compute(
@@ -508,10 +513,13 @@ def collect_content(
     elif q is not None:
         est = PriorEstimator(n_resamples=n_resamples, confidence_level=confidence_level,
                              random_state=int(rng.randint(2**31 - 1)))
+        # the labelled rows' cells (given, or found as for the bootstrap) are the units of the
+        # estimator's shift test and interval too, not rows counted as independent
         est.fit(np.column_stack([1.0 - p, p]), y01.astype(np.intp), w,
-                class_names=content.class_names)
+                class_names=content.class_names, cells=unit.groups)
         est_res = notes.compute("prevalence", "estimated prevalence", est.estimate,
                                 np.column_stack([1.0 - q, q]))
+        content.prevalence_cells = est.n_source_cells_
         content.source_prevalence = float(est.source_prior_[1])
         content.target_prevalence = float(est_res.prior[1])
         if est_res.interval is not None:

@@ -99,6 +99,9 @@ class MulticlassReportContent:
     recommendation: Recommendation | None = None
     #: what every bootstrap interval resampled (see ``ReportContent.resampling``)
     resampling: Any = None
+    #: the labelled cells the class shares' intervals and shift test counted as units (None:
+    #: rows; see ``ReportContent.prevalence_cells``)
+    prevalence_cells: int | None = None
     #: class shares batch by batch (:func:`probwrap.shift.prior_by_batch` or
     #: ``PriorShiftWrapper.monitor``), and one prevalence alarm per class
     #: (:class:`~probwrap.report._alarm_chart.BatchAlarm`; two classes: the second only)
@@ -294,6 +297,8 @@ def collect_general_content(
                             getattr(prior_shift, "prior_strength", None))
         content.applied_prior = np.asarray(prior_shift.applied_prior_, dtype=float)
         content.adaptation_weight = float(prior_shift.adaptation_weight_)
+        content.prevalence_cells = getattr(
+            getattr(prior_shift, "prior_estimator_", None), "n_source_cells_", None)
         if X_unlabelled is not None and batch_size is not None:
             step("class shares by batch", 3)
             content.batch_table = notes.compute(
@@ -303,8 +308,10 @@ def collect_general_content(
     elif q is not None:
         est = PriorEstimator(n_resamples=n_resamples, confidence_level=confidence_level,
                              random_state=int(rng.randint(2**31 - 1)))
-        est.fit(proba, y_index, w, class_names=content.class_names)
+        # the labelled rows' cells are the estimator's units too (see the binary report)
+        est.fit(proba, y_index, w, class_names=content.class_names, cells=unit.groups)
         res = notes.compute("prevalence", "estimated class shares", est.estimate, q)
+        content.prevalence_cells = est.n_source_cells_
         content.source_prior = np.asarray(est.source_prior_, dtype=float)
         content.target_prior = np.asarray(res.prior, dtype=float)
         content.target_interval = res.interval

@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 
-from ._cells import reliability_diagram, unit_words, widened_words
+from ._cells import prevalence_unit_words, reliability_diagram, unit_words, widened_words
 from ._common import draw_figure, figure_notes
 from ._general import MulticlassReportContent
 from ._html_parts import (
@@ -284,7 +284,8 @@ def _prevalence(c: MulticlassReportContent, figures: dict[str, str]) -> str:
     )
     parts.append(
         f"<p>Estimated from {c.n_unlabelled or 'the'} unlabelled rows, assuming only the class "
-        f"shares changed (prior shift). {verdict}</p>"
+        f"shares changed (prior shift). {verdict}"
+        + (f" {_text(units)}" if (units := prevalence_unit_words(c)) else "") + "</p>"
     )
     if both:
         parts.append(

@@ -14,7 +14,7 @@ from ..plot import (
     PrevalenceDriftDisplay,
 )
 from ._alarm_chart import alarm_svg
-from ._cells import reliability_diagram, unit_words, widened_words
+from ._cells import prevalence_unit_words, reliability_diagram, unit_words, widened_words
 from ._common import draw_figure, figure_notes
 from ._content import BAYES_NAME, HALF_NAME, ReportContent
 from ._general_groups import multiclass_group_section
@@ -317,7 +317,8 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
         parts.append(
             f"<p>Prevalence is the share of {_positive(c)}, estimated from "
             f"{c.n_unlabelled or 'the'} unlabelled rows, assuming only the class shares of "
-            f"{_positive(c)} and {_class_pair(c)[0]} changed (prior shift). {verdict}</p>"
+            f"{_positive(c)} and {_class_pair(c)[0]} changed (prior shift). {verdict}"
+            + (f" {_text(units)}" if (units := prevalence_unit_words(c)) else "") + "</p>"
         )
         if both:
             parts.append(
