@@ -17,8 +17,11 @@ import warnings
 import numpy as np
 import pytest
 import statsmodels.api as sm
+from sklearn.base import BaseEstimator, ClassifierMixin
+from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 
+from probwrap import PriorShiftWrapper
 from probwrap.aggregated import expand_counts
 from probwrap.report import build_report
 from probwrap.shift import PriorEstimator
@@ -129,3 +132,40 @@ def test_multiclass_report_class_shares_count_the_cells():
     width = np.diff(np.asarray(with_cells.target_interval), axis=1)[:, 0]
     assert width[0] > 1.5 * (rows[0, 1] - rows[0, 0])
     assert "40 cells as the units" in page
+
+
+class _GivenScores(ClassifierMixin, BaseEstimator):
+    """A fitted model whose positive-class probability is its one feature."""
+
+    def fit(self, X, y):
+        self.classes_ = np.array([0, 1])
+        self.n_features_in_ = 1
+        return self
+
+    def predict_proba(self, X):
+        x = np.asarray(X, dtype=float)[:, 0]
+        return np.column_stack([1.0 - x, x])
+
+
+def test_a_given_prior_shift_wrapper_is_read_with_or_without_its_cells():
+    # the report shows a fitted PriorShiftWrapper's own numbers: it names the cells the
+    # wrapper counted, and says when the wrapper counted the rows while the report has cells
+    rng = np.random.default_rng(5)
+    cell = np.repeat(np.arange(30), 20)
+    p = 1.0 / (1.0 + np.exp(-(rng.normal(0, 1.5, 30)[cell] + 0.5 * rng.normal(size=600))))
+    y = (rng.random(600) < p).astype(int)
+    q = p[rng.permutation(600)[:300]]
+    model = FrozenEstimator(_GivenScores().fit(p[:, None], y))
+    out = {}
+    for fitted_cells in (cell, None):
+        with warnings.catch_warnings(record=True):
+            warnings.simplefilter("always")
+            wrapper = PriorShiftWrapper(model, n_resamples=50, random_state=0).fit(
+                p[:, None], y, cells=fitted_cells).adapt(q[:, None])
+            out[fitted_cells is None] = build_report(
+                y_true=y, y_prob=p, unlabelled_prob=q, prior_shift=wrapper, cells=cell,
+                n_resamples=20, random_state=0)
+    (with_cells, page), (without, page_rows) = out[False], out[True]
+    assert with_cells.prevalence_cells == 30 and "30 cells as the units" in page
+    assert without.prevalence_cells is None
+    assert "fitted without cells" in page_rows and "fitted without cells" not in page
