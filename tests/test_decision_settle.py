@@ -6,7 +6,7 @@ import warnings
 
 import numpy as np
 import pytest
-from scipy.stats import norm
+from scipy.stats import binomtest
 from sklearn.datasets import load_digits
 from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
@@ -32,20 +32,46 @@ def _paired(p, y, cutoff_a, cutoff_b, w=None):
 
 def test_hand_worked_example_one_sided_rule():
     # Worked by hand: the plug-in cutoff 0.25 flags 3 negatives the least-cost cutoff (0.55,
-    # middle of 0.5..0.6) does not: excess 3/8, SE sqrt((3/8 - (3/8)^2) / 8) = 0.1712 and
-    # 0.375 > z_0.95 * 0.1712 = 0.2815 (z from SciPy), so it is passed over; the cutoff 0.35
-    # flags 2 such rows: excess 0.25 <= 1.645 * 0.1531 = 0.2518, kept as nearest the plug-in.
-    z = norm.ppf(0.95)
+    # middle of 0.5..0.6) does not. Given those 3 rows, the plug-in cutoff costs more exactly
+    # when their share of positives is below 1/4 (fp 1, fn 3); 0 positives of 3 has the exact
+    # binomial probability (3/4)^3 = 27/64 = 0.42 under a share of 1/4 (SciPy's binomtest
+    # beside it): no evidence, the plug-in cutoff is kept. The normal approximation used before
+    # (excess 3/8 > z_0.95 * 0.1712) rejected it on these three rows.
     res = settle_cutoff(P, Y, C)
     assert res.plugin == 0.25 and res.least_cost == pytest.approx(0.55)
     assert res.excess == pytest.approx(3 / 8)
     assert res.excess_se == pytest.approx(np.sqrt((3 / 8 - 9 / 64) / 8), rel=1e-12)
-    assert not res.kept_plugin and res.cutoff == pytest.approx(0.35)
-    mean, se = _paired(P, Y, 0.35, 0.55)
-    assert mean <= z * se < 0.26
-    # at level 0.2 (z = 0.8416) even the cutoff 0.45 (one extra negative: excess 0.125 >
-    # 0.8416 * sqrt((1/8 - 1/64) / 8) = 0.0984) is passed over: the least-cost cutoff
-    assert settle_cutoff(P, Y, C, level=0.2).cutoff == pytest.approx(0.55)
+    assert res.kept_plugin and res.cutoff == 0.25
+    assert res.p_value == pytest.approx(27 / 64, rel=1e-12)
+    assert res.p_value == pytest.approx(binomtest(0, 3, 0.25, alternative="less").pvalue)
+    # every row counted 4 times (frequency weights): 0 positives of 12, (3/4)^12 = 0.032 < 0.05,
+    # rejected; the cutoff 0.35 (8 such rows, (3/4)^8 = 0.100) is the nearest not rejected
+    w4 = settle_cutoff(P, Y, C, sample_weight=np.full(8, 4.0))
+    assert not w4.kept_plugin and w4.cutoff == pytest.approx(0.35)
+    assert w4.p_value == pytest.approx(0.75 ** 12, rel=1e-12)
+    assert settle_cutoff(np.repeat(P, 4), np.repeat(Y, 4), C).cutoff == pytest.approx(0.35)
+    # at level 0.2 the cutoff 0.35 is passed over too (0.100 <= 0.2); 0.45 ((3/4)^4 = 0.32) not
+    assert settle_cutoff(P, Y, C, sample_weight=np.full(8, 4.0), level=0.2).cutoff == (
+        pytest.approx(0.45))
+
+
+def test_exact_p_value_matches_scipy_binomtest_both_directions():
+    # The anchor flags fewer rows than the least-cost cutoff (anchor above it): it costs more
+    # when the rows between hold a positive share above the plug-in cutoff; the upper tail.
+    rng = np.random.default_rng(2)
+    p = rng.uniform(size=90)
+    y = (rng.uniform(size=90) < p).astype(int)
+    least = search_cutoff(p, y, C, score_bounds=(0, 1)).cutoff
+    for anchor in (0.05, 0.15, least + 0.1, least + 0.25, 0.9):
+        res = settle_cutoff(p, y, C, anchor=anchor)
+        lo, hi = sorted((anchor, least))
+        between = (p > lo) & (p <= hi)
+        k, m = int(y[between].sum()), int(between.sum())
+        side = "less" if anchor < least else "greater"
+        if m:
+            assert res.p_value == pytest.approx(binomtest(k, m, 0.25, alternative=side).pvalue,
+                                                rel=1e-9), anchor
+        assert res.kept_plugin == (res.p_value > 0.05 or res.excess <= 0)
 
 
 def test_reconstruction_matches_direct_paired_computation():
@@ -181,8 +207,8 @@ def test_costs_near_the_largest_float_settle_like_scaled_ones():
     # the rule depends on the costs only up to a common factor; squared costs of 1e308 used to
     # overflow (inf - inf in the standard error) and the report warned "overflow" for them
     rng = np.random.default_rng(11)
-    t = rng.beta(1, 3, 61)
-    y = (rng.uniform(size=61) < t).astype(int)
+    t = rng.beta(1, 3, 100)
+    y = (rng.uniform(size=100) < t).astype(int)
     p = np.clip(t ** rng.uniform(0.4, 2.5), 1e-6, 1 - 1e-6)
     small = settle_cutoff(p, y, {"fp": 1.0, "fn": 4.0})
     with warnings.catch_warnings():

@@ -166,8 +166,10 @@ def recommend(content, y01, p, w, q, E, notes) -> None:
                                           content.chosen_cutoff, ref_cut)[0]
             said = (f"on the labelled rows the {chosen.label} costs {diff:+.4g} per row against "
                     f"the {ref_name} (standard error {settled.excess_se:.2g})")
-            test = (f"a one-sided paired test at the {100 * settled.level:g}% level, the rule "
-                    "of the tuned cost policy (probwrap.decision.settle_cutoff)")
+            test = (f"an exact one-sided test at the {100 * settled.level:g}% level (the share "
+                    "of positives among the rows between the two cutoffs; p = "
+                    f"{settled.p_value:.2g}), the rule of the tuned cost policy "
+                    "(probwrap.decision.settle_cutoff)")
             what = (f"The {RECALIBRATED_NAME} ({ref_cut:.4g}) is the score at which a "
                     f"{anchor_map} map fitted on these rows reaches the {BAYES_NAME} "
                     f"({content.plugin:.4g}): these rows show the scores to be miscalibrated. "
