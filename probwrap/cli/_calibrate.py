@@ -291,6 +291,9 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
     from probwrap.calibration import map_from_dict, map_score_scale
     from probwrap.calibration._serialize import MAP_FORMAT
 
+    if str(path) == "-":
+        raise DataError("-: reading a map from standard input is not supported; give the path "
+                        "of the map file")
     path = Path(path)
     if not path.exists():
         raise DataError(f"{path}: file not found")

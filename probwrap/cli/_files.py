@@ -20,6 +20,11 @@ def check_out_suffix(
     parser: argparse.ArgumentParser, out: str, suffixes: tuple[str, ...], flag: str = "--out"
 ) -> None:
     """A usage error (exit 2) unless ``out`` ends with one of ``suffixes``."""
+    if out == "-":
+        parser.error(
+            f"{flag} -: writing to standard output is not supported; give a file name ending "
+            f"in {', '.join(suffixes)}"
+        )
     if Path(out).name.lower() in suffixes:
         # ".json" is a name with no extension (a hidden file) to Python and to the user's shell
         parser.error(
@@ -128,10 +133,10 @@ def write_text(path: str | Path, text: str) -> None:
 def write_table(frame: Any, path: str | Path, *, dialect: dict[str, Any] | None = None) -> None:
     """Write a DataFrame atomically, as Parquet (``.parquet``/``.pq``) or CSV (``.csv``).
 
-    ``dialect`` (CSV only): ``sep``, ``decimal`` and ``bom`` of the file the table was read
-    from, so that a semicolon file with decimal commas is written back as one (numbers with a
-    decimal comma) and a file that started with a byte-order mark starts with one (spreadsheets
-    read the encoding from it).
+    ``dialect`` (CSV only): ``sep``, ``decimal``, ``bom`` and ``newline`` of the file the
+    table was read from, so that a semicolon file with decimal commas is written back as one (numbers with a
+    decimal comma), a file that started with a byte-order mark starts with one (spreadsheets
+    read the encoding from it) and a file with Windows line endings keeps them.
     """
     path = Path(path)
     dialect = dialect or {}
@@ -142,5 +147,6 @@ def write_table(frame: Any, path: str | Path, *, dialect: dict[str, Any] | None 
         write_atomic(path, lambda tmp: frame.to_parquet(tmp, index=False))
     else:
         options = {"sep": dialect.get("sep", ","), "decimal": dialect.get("decimal", "."),
-                   "encoding": "utf-8-sig" if dialect.get("bom") else "utf-8"}
+                   "encoding": "utf-8-sig" if dialect.get("bom") else "utf-8",
+                   "lineterminator": dialect.get("newline", "\n")}
         write_atomic(path, lambda tmp: frame.to_csv(tmp, index=False, **options))

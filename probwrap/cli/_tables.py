@@ -7,8 +7,11 @@ row.
 
 from __future__ import annotations
 
+import csv
+import lzma
 import re
 import shlex
+import zipfile
 from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
@@ -40,7 +43,7 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
 
     ``as_text=True`` (a table that is written out again, as by ``calibrate apply``): every CSV
     column is kept as the text it holds (and ``frame.attrs["csv_dialect"]`` records the
-    separator, the decimal mark and whether the file started with a byte-order mark), with nothing taken for a missing value in the other
+    separator, the decimal mark, whether the file started with a byte-order mark and its line end), with nothing taken for a missing value in the other
     columns (``NA``, ``None``, ``000123`` and ``12345678901234567890`` stay as written), and
     decimal commas stay commas (:func:`numeric_column` reads them); a Parquet file's index,
     when it has a named or non-default one, becomes an ordinary column so that it is written
@@ -52,6 +55,9 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     the other columns are read as usual.
     """
     pd = require("pandas")
+    if str(path) == "-":
+        raise DataError("-: reading a table from standard input is not supported; save it to a "
+                        "file (CSV, compressed CSV or Parquet) and give the file's path")
     path = Path(path)
     if not path.exists():
         raise DataError(f"{path}: file not found")
@@ -95,7 +101,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                 # how the file was written, so that a table written back (calibrate apply)
                 # opens the same way in the same spreadsheet
                 frame.attrs["csv_dialect"] = {"sep": sep, "decimal": decimal,
-                                              "bom": _starts_with_bom(path)}
+                                              "bom": _starts_with_bom(path),
+                                              "newline": _line_end(path, encoding)}
             elif decimal == ",":  # columns read as text keep their decimal commas: make dots
                 for column in set(exact) & set(frame.columns):
                     frame[column] = frame[column].str.replace(",", ".", regex=False)
@@ -172,13 +179,11 @@ def _blank_lines_as_missing(pd: Any, frame: Any, path: Path, encoding: str, sep:
     out of line with the input). Blank lines before the header and after the last row are
     still ignored.
     """
-    import csv
-
     try:
-        with open(path, encoding=encoding, newline="") as handle:
+        with _open_text(path, encoding) as handle:
             blank = [not any(field.strip() for field in record)
                      for record in csv.reader(handle, delimiter=sep)]
-    except (OSError, UnicodeError, csv.Error):
+    except _UNREADABLE:
         return frame
     filled = [i for i, b in enumerate(blank) if not b]
     if len(filled) < 2:
@@ -194,11 +199,9 @@ def _blank_lines_as_missing(pd: Any, frame: Any, path: Path, encoding: str, sep:
 
 def _check_field_counts(path: Path, sep: str, encoding: str) -> None:
     """A DataError naming the first line with more (non-empty) fields than the header."""
-    import csv
-
     header: int | None = None
     try:
-        with open(path, encoding=encoding, newline="") as handle:
+        with _open_text(path, encoding) as handle:
             reader = csv.reader(handle, delimiter=sep)
             for row in reader:
                 if not any(field.strip() for field in row):
@@ -209,7 +212,7 @@ def _check_field_counts(path: Path, sep: str, encoding: str) -> None:
                     break
             else:
                 return
-    except (OSError, UnicodeError, csv.Error):
+    except _UNREADABLE:
         return
     hint = (
         "; a number written with a decimal comma in a comma-separated file (0,42) makes two "
@@ -231,13 +234,50 @@ _NOT_TABLES = {
 }
 
 
+#: errors of a best-effort look at a file (a damaged archive, bytes that are not text): the
+#: look gives up and pandas' own reading reports the problem
+_UNREADABLE = (OSError, EOFError, ValueError, UnicodeError, csv.Error, zipfile.BadZipFile,
+               lzma.LZMAError)
+
+#: compressed CSV files pandas reads by extension, and the module that opens them
+_COMPRESSED = {".gz": "gzip", ".bz2": "bz2", ".xz": "lzma", ".zip": "zip"}
+
+
+def _open_bytes(path: Path) -> Any:
+    """The file opened for reading bytes, decompressed when its extension says it is
+    compressed (``.gz``, ``.bz2``, ``.xz``, ``.zip`` holding one file), as pandas reads it: the
+    separator, the header and the blank lines are then looked for in the CSV text itself, not in
+    the compressed bytes."""
+    kind = _COMPRESSED.get(path.suffix.lower())
+    if kind is None:
+        return open(path, "rb")
+    if kind == "zip":
+        archive = zipfile.ZipFile(path)
+        names = [n for n in archive.namelist() if not n.endswith("/")]
+        if len(names) != 1:
+            archive.close()
+            raise DataError(f"{path}: a .zip file must hold exactly one file (it holds "
+                            f"{len(names)})")
+        return archive.open(names[0])
+    import importlib
+
+    return importlib.import_module(kind).open(path, "rb")
+
+
+def _open_text(path: Path, encoding: str, errors: str = "strict") -> Any:
+    """The (decompressed) file opened as text, line ends kept as written (for ``csv``)."""
+    import io
+
+    return io.TextIOWrapper(_open_bytes(path), encoding=encoding, errors=errors, newline="")
+
+
 def _csv_encoding(path: Path) -> str:
     """UTF-16 when the file starts with a UTF-16 byte-order mark (spreadsheets' "Unicode text"),
     UTF-8 otherwise (a UTF-8 byte-order mark is skipped)."""
     try:
-        with open(path, "rb") as handle:
+        with _open_bytes(path) as handle:
             start = handle.read(2)
-    except OSError:
+    except _UNREADABLE:
         return "utf-8-sig"
     return "utf-16" if start in (b"\xff\xfe", b"\xfe\xff") else "utf-8-sig"
 
@@ -245,24 +285,32 @@ def _csv_encoding(path: Path) -> str:
 def _starts_with_bom(path: Path) -> bool:
     """True when the file starts with a UTF-8 or UTF-16 byte-order mark."""
     try:
-        with open(path, "rb") as handle:
+        with _open_bytes(path) as handle:
             start = handle.read(3)
-    except OSError:
+    except _UNREADABLE:
         return False
     return start == b"\xef\xbb\xbf" or start[:2] in (b"\xff\xfe", b"\xfe\xff")
+
+
+def _line_end(path: Path, encoding: str) -> str:
+    """The end of the first line of a CSV file: "\\r\\n" (Windows) or "\\n"."""
+    try:
+        with _open_text(path, encoding, errors="replace") as handle:
+            first = handle.readline()
+    except _UNREADABLE:
+        return "\n"
+    return "\r\n" if first.endswith("\r\n") else "\n"
 
 
 def _csv_header(path: Path, encoding: str, sep: str) -> list[str] | None:
     """The column names as written in the first non-blank line of a CSV file (pandas renames
     repeated names, so they are read here once more)."""
-    import csv
-
     try:
-        with open(path, encoding=encoding, newline="") as handle:
+        with _open_text(path, encoding) as handle:
             for row in csv.reader(handle, delimiter=sep):
                 if any(field.strip() for field in row):
                     return row
-    except (OSError, UnicodeError, csv.Error):
+    except _UNREADABLE:
         return None
     return None
 
@@ -286,7 +334,7 @@ def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
     the whole file is looked at, since a sorted file may start with many rows of whole numbers.
     """
     try:
-        with open(path, encoding=encoding, errors="replace") as handle:
+        with _open_text(path, encoding, errors="replace") as handle:
             header = handle.readline()
             while header and not header.strip():
                 header = handle.readline()
@@ -303,7 +351,7 @@ def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
                 chunk += handle.readline()  # end the chunk at the end of a line
                 if _DECIMAL_COMMA.search(chunk):
                     return ";", ","
-    except OSError:
+    except _UNREADABLE:
         return ",", "."
 
 
@@ -369,10 +417,29 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str) -> n
         row = int(np.flatnonzero(bad)[0])
         raw_value = series.iloc[row]
         what = "the value is missing" if pd.isna(raw_value) else (
-            f"{shown(raw_value)} is not a finite number"
+            f"{shown(raw_value)} is not a finite number{_number_hint(raw_value)}"
         )
         raise DataError(f"{_row(path, column, row)}: {what}")
     return values
+
+
+#: a number written with a comma in it (a thousands separator or a decimal comma): 3,000 or
+#: 0,42 or 1.234,5
+_COMMA_NUMBER = re.compile(r"[-+]?[\d.]*\d,[\d.,]*\d(?:[eE][-+]?\d+)?")
+
+
+def _number_hint(value: Any) -> str:
+    """Why a field that looks like a number was not read as one, or ""."""
+    text = str(value).strip().strip('"').strip()
+    if text.endswith("%") and _number(text[:-1].strip()) is not None:
+        return (f"; a percent sign is not read: write scores as probabilities in [0, 1] "
+                f"({clean(text)} as {_number(text[:-1].strip()) / 100:.15g}) and other numbers "
+                "without it")
+    if _COMMA_NUMBER.fullmatch(text):
+        return ("; numbers are read without thousands separators and with a decimal point (a "
+                "decimal comma is read only in a semicolon-separated file, where ';' separates "
+                "the fields)")
+    return ""
 
 
 def probability_column(frame: Any, column: str, path: str | Path, *, flag: str) -> np.ndarray:
@@ -381,9 +448,16 @@ def probability_column(frame: Any, column: str, path: str | Path, *, flag: str) 
     bad = (values < 0.0) | (values > 1.0)
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
+        if values.min() >= 0.0 and values.max() <= 100.0:
+            # all in [0, 100] with some above 1: a share written in percent
+            hint = (f"the column holds numbers from {shown(values.min())} to "
+                    f"{shown(values.max())}, which look like percentages: divide them by 100; for log-odds scores use "
+                    "--scale log-odds")
+        else:
+            hint = "use --scale log-odds for log-odds scores"
         raise DataError(
             f"{_row(path, column, row)}: {shown(values[row])} is not a probability in [0, 1] "
-            "(use --scale log-odds for log-odds scores)"
+            f"({hint})"
         )
     return values
 
@@ -425,9 +499,13 @@ def read_labels(
     if distinct.shape[0] != 2:
         shown_labels = ", ".join(shown(v) for v in distinct[:6])
         more = ", ..." if distinct.shape[0] > 6 else ""
+        tidy = {str(v).strip().casefold() for v in distinct}
+        hint = ("; some differ only in spaces around them or in case, and are read as "
+                "different labels: write each label one way") if (
+            distinct.shape[0] > 2 and len(tidy) < distinct.shape[0]) else ""
         raise DataError(
             f"{path}: column {shown(column)} must hold exactly two labels (binary outcome); it "
-            f"holds {distinct.shape[0]}: {shown_labels}{more}"
+            f"holds {distinct.shape[0]}: {shown_labels}{more}{hint}"
         )
     numbers = [_number(v) for v in distinct]
     zero_one = sorted(n for n in numbers if n is not None) == [0.0, 1.0]

@@ -1,0 +1,221 @@
+"""Score files as people write them, on real data: held-out scores of a logistic regression on
+scikit-learn's breast cancer set, saved compressed, in European spreadsheet form, as percentages,
+with percent signs or thousands separators, or sent through standard input.
+
+Each case is compared with the plain CSV file read by the same verb (the same cutoff, the same
+map), or must stop with a one-line message that says what was expected.
+"""
+
+from __future__ import annotations
+
+import bz2
+import gzip
+import json
+import lzma
+import zipfile
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from probwrap.cli import main
+
+
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    import probwrap.cli._progress as common
+
+    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+
+
+def run(capsys, *argv):
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+@pytest.fixture(scope="module")
+def scored(tmp_path_factory):
+    """Held-out probabilities of a regularised logistic regression on load_breast_cancer."""
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.model_selection import train_test_split
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    X, y = load_breast_cancer(return_X_y=True)
+    X_fit, X_held, y_fit, y_held = train_test_split(X, y, test_size=0.5, random_state=0)
+    model = make_pipeline(StandardScaler(), LogisticRegression(C=0.1)).fit(X_fit, y_fit)
+    root = tmp_path_factory.mktemp("messy")
+    frame = pd.DataFrame({"score": model.predict_proba(X_held)[:, 1], "label": y_held,
+                          "w": np.arange(y_held.shape[0]) % 3 + 1.0})
+    frame.to_csv(root / "plain.csv", index=False)
+    return root, frame
+
+
+def _cutoff(capsys, path, *extra):
+    code, out, err = run(capsys, "cutoff", "--scores", path, "--score-column", "score",
+                         "--label-column", "label", "--weight-column", "w", "--cost-fp", 1,
+                         "--cost-fn", 5, "--resamples", 0, "--format", "json", *extra)
+    return code, out, err
+
+
+def _compress(kind, text, path):
+    data = text.encode("utf-8")
+    if kind == "gz":
+        with gzip.open(path, "wb") as handle:
+            handle.write(data)
+    elif kind == "bz2":
+        path.write_bytes(bz2.compress(data))
+    elif kind == "xz":
+        path.write_bytes(lzma.compress(data))
+    else:
+        with zipfile.ZipFile(path, "w") as archive:
+            archive.writestr("scores.csv", data)
+
+
+@pytest.mark.parametrize("kind", ["gz", "bz2", "xz", "zip"])
+def test_compressed_semicolon_file_reads_as_the_plain_one(scored, capsys, kind):
+    """A semicolon file with decimal commas, compressed: the separator and the decimal mark are
+    found in the CSV text, not in the compressed bytes (they were looked for in the bytes, so
+    the file was read as one comma-separated column and refused)."""
+    root, frame = scored
+    code, out, err = _cutoff(capsys, root / "plain.csv")
+    assert code == 0, err
+    expected = json.loads(out)
+    path = root / f"euro.csv.{kind}"
+    _compress(kind, frame.to_csv(index=False, sep=";", decimal=","), path)
+    code, out, err = _cutoff(capsys, path)
+    assert code == 0, err
+    got = json.loads(out)
+    assert got["n_rows"] == frame.shape[0] == expected["n_rows"]
+    assert got["cutoff"] == expected["cutoff"]
+    assert got["weights"] == expected["weights"]
+
+
+def test_compressed_file_with_a_repeated_column_name_is_refused(scored, capsys):
+    """The header of a gzip'd file is read for repeated names as in a plain file (it was not
+    read, so pandas' renamed 'score.1' passed and the first 'score' was used without a word)."""
+    root, frame = scored
+    text = frame[["score", "label", "w"]].assign(extra=frame["score"][::-1].to_numpy()).to_csv(
+        index=False).replace("extra", "score", 1)
+    path = root / "twice.csv.gz"
+    _compress("gz", text, path)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "names the column(s) 'score' more than once" in err
+
+
+def test_zip_with_two_files_is_refused(scored, capsys):
+    root, frame = scored
+    path = root / "two.zip"
+    with zipfile.ZipFile(path, "w") as archive:
+        archive.writestr("a.csv", frame.to_csv(index=False))
+        archive.writestr("b.csv", frame.to_csv(index=False))
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "two.zip: a .zip file must hold exactly one file (it holds 2)" in err
+
+
+def test_percentages_are_named_as_percentages(scored, capsys):
+    """Scores written as 0-100: the message says they look like percentages (it pointed to
+    --scale log-odds only, which would run and give a wrong cutoff on percentages)."""
+    root, frame = scored
+    path = root / "percent.csv"
+    frame.assign(score=frame["score"] * 100).to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "look like percentages: divide them by 100" in err
+    assert "column 'score', row" in err
+    # log-odds (negative values) keep the log-odds hint, without the percentage one
+    path = root / "logodds.csv"
+    frame.assign(score=np.log(frame["score"] / (1 - frame["score"]))).to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "use --scale log-odds" in err and "percentages" not in err
+
+
+def test_percent_sign_and_thousands_separators_are_explained(scored, capsys):
+    root, frame = scored
+    path = root / "signs.csv"
+    frame.assign(score=[f"{100 * v:.1f}%" for v in frame["score"]]).to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    first = f"{100 * frame['score'].iloc[0]:.1f}%"
+    assert f"'{first}' is not a finite number; a percent sign is not read" in err
+    assert f"({first} as {float(first[:-1]) / 100:.15g})" in err
+
+    path = root / "thousands.csv"
+    frame.assign(w=[f"{1000 * v:,.0f}" for v in frame["w"]]).to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "column 'w', row 2" in err and "without thousands separators" in err
+    assert "(--weight-column)" in err
+
+    # a comma-separated file with decimal commas in quotes (a spreadsheet set to ',' fields)
+    path = root / "quoted_commas.csv"
+    frame.assign(score=[f"{v:.6f}".replace(".", ",") for v in frame["score"]]).to_csv(
+        path, index=False)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "decimal comma is read only in a semicolon-separated file" in err
+
+
+def test_standard_input_and_output_are_refused_by_name(scored, capsys, tmp_path):
+    """'-' is not read as a file called '-' ("file not found") nor refused as a file with no
+    extension: the message says that standard input/output is not supported."""
+    root, _ = scored
+    code, _, err = _cutoff(capsys, "-")
+    assert code == 1
+    assert "-: reading a table from standard input is not supported" in err
+    code, _, err = run(capsys, "calibrate", "fit", "--scores", root / "plain.csv",
+                       "--score-column", "score", "--label-column", "label", "--method", "platt",
+                       "--out", tmp_path / "map.json")
+    assert code == 0, err
+    code, _, err = run(capsys, "calibrate", "apply", "--map", "-", "--scores",
+                       root / "plain.csv", "--score-column", "score", "--out", tmp_path / "o.csv")
+    assert code == 1
+    assert "-: reading a map from standard input is not supported" in err
+    with pytest.raises(SystemExit) as info:
+        main(["calibrate", "apply", "--map", str(tmp_path / "map.json"), "--scores",
+              str(root / "plain.csv"), "--score-column", "score", "--out", "-"])
+    assert info.value.code == 2
+    assert "--out -: writing to standard output is not supported" in capsys.readouterr().err
+
+
+def test_labels_differing_only_in_spaces_are_named(scored, capsys):
+    """'yes' and 'yes ' (a spreadsheet cell with a trailing space) are two labels: the message
+    says that some differ only in spaces or case (it listed three labels without saying why)."""
+    root, frame = scored
+    path = root / "spaces.csv"
+    words = np.where(frame["label"] == 1, "yes", "no").astype(object)
+    words[::4] = [w + " " for w in words[::4]]
+    frame.assign(label=words).to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path, "--positive-label", "yes")
+    assert code == 1
+    assert "differ only in spaces around them or in case" in err
+
+
+def test_apply_keeps_windows_line_endings(scored, capsys, tmp_path):
+    """calibrate apply on a file with CRLF line ends and a byte-order mark (Excel's 'CSV UTF-8'
+    on Windows) writes CRLF back (it wrote LF), with the same calibrated numbers as on the
+    plain file."""
+    root, frame = scored
+    code, _, err = run(capsys, "calibrate", "fit", "--scores", root / "plain.csv",
+                       "--score-column", "score", "--label-column", "label", "--method", "platt",
+                       "--out", tmp_path / "map.json")
+    assert code == 0, err
+    windows = tmp_path / "windows.csv"
+    with open(windows, "w", encoding="utf-8-sig", newline="") as handle:
+        frame.to_csv(handle, index=False, lineterminator="\r\n")
+    for source, out in ((root / "plain.csv", tmp_path / "plain_out.csv"),
+                        (windows, windows)):
+        code, _, err = run(capsys, "calibrate", "apply", "--map", tmp_path / "map.json",
+                           "--scores", source, "--score-column", "score", "--out", out)
+        assert code == 0, err
+    data = windows.read_bytes()
+    assert data.startswith(b"\xef\xbb\xbf")
+    assert data.count(b"\r\n") == frame.shape[0] + 1 and b"\n" not in data.replace(b"\r\n", b"")
+    assert b"\r\n" not in (tmp_path / "plain_out.csv").read_bytes()
+    pd.testing.assert_frame_equal(pd.read_csv(windows, encoding="utf-8-sig"),
+                                  pd.read_csv(tmp_path / "plain_out.csv"))
