@@ -219,3 +219,36 @@ def test_apply_keeps_windows_line_endings(scored, capsys, tmp_path):
     assert b"\r\n" not in (tmp_path / "plain_out.csv").read_bytes()
     pd.testing.assert_frame_equal(pd.read_csv(windows, encoding="utf-8-sig"),
                                   pd.read_csv(tmp_path / "plain_out.csv"))
+
+
+@pytest.mark.parametrize("sep", [";", ",", "\t"])
+def test_spreadsheet_sep_line_is_read_and_written_back(scored, capsys, tmp_path, sep):
+    """A first line 'sep=;' (written by spreadsheets so that another locale opens the file
+    right) names the separator: the file reads as without it (it was taken for the header and
+    the file refused), and calibrate apply writes the line back."""
+    root, frame = scored
+    decimal = "," if sep == ";" else "."
+    path = tmp_path / "with_sep_line.csv"
+    path.write_text(f"sep={sep}\n" + frame.to_csv(index=False, sep=sep, decimal=decimal),
+                    encoding="utf-8")
+    code, out, err = _cutoff(capsys, root / "plain.csv")
+    assert code == 0, err
+    expected = json.loads(out)
+    code, out, err = _cutoff(capsys, path)
+    assert code == 0, err
+    got = json.loads(out)
+    assert (got["n_rows"], got["cutoff"], got["weights"]) == (
+        expected["n_rows"], expected["cutoff"], expected["weights"])
+    code, _, err = run(capsys, "calibrate", "fit", "--scores", path, "--score-column", "score",
+                       "--label-column", "label", "--method", "platt",
+                       "--out", tmp_path / "map.json")
+    assert code == 0, err
+    code, _, err = run(capsys, "calibrate", "apply", "--map", tmp_path / "map.json",
+                       "--scores", path, "--score-column", "score", "--out", tmp_path / "o.csv")
+    assert code == 0, err
+    lines = (tmp_path / "o.csv").read_text(encoding="utf-8").splitlines()
+    assert lines[0] == f"sep={sep}"
+    assert lines[1].split(sep) == ["score", "label", "w", "calibrated_probability"]
+    back = pd.read_csv(tmp_path / "o.csv", skiprows=1, sep=sep, decimal=decimal,
+                       float_precision="round_trip")
+    np.testing.assert_array_equal(back["score"].to_numpy(), frame["score"].to_numpy())

@@ -133,10 +133,11 @@ def write_text(path: str | Path, text: str) -> None:
 def write_table(frame: Any, path: str | Path, *, dialect: dict[str, Any] | None = None) -> None:
     """Write a DataFrame atomically, as Parquet (``.parquet``/``.pq``) or CSV (``.csv``).
 
-    ``dialect`` (CSV only): ``sep``, ``decimal``, ``bom`` and ``newline`` of the file the
-    table was read from, so that a semicolon file with decimal commas is written back as one (numbers with a
+    ``dialect`` (CSV only): ``sep``, ``decimal``, ``bom``, ``newline`` and ``sep_line`` of the
+    file the table was read from, so that a semicolon file with decimal commas is written back as one (numbers with a
     decimal comma), a file that started with a byte-order mark starts with one (spreadsheets
-    read the encoding from it) and a file with Windows line endings keeps them.
+    read the encoding from it), a file with Windows line endings keeps them and a file that
+    started with a spreadsheet's ``sep=X`` line starts with it.
     """
     path = Path(path)
     dialect = dialect or {}
@@ -146,7 +147,14 @@ def write_table(frame: Any, path: str | Path, *, dialect: dict[str, Any] | None 
         require("pyarrow")
         write_atomic(path, lambda tmp: frame.to_parquet(tmp, index=False))
     else:
-        options = {"sep": dialect.get("sep", ","), "decimal": dialect.get("decimal", "."),
-                   "encoding": "utf-8-sig" if dialect.get("bom") else "utf-8",
-                   "lineterminator": dialect.get("newline", "\n")}
-        write_atomic(path, lambda tmp: frame.to_csv(tmp, index=False, **options))
+        sep, newline = dialect.get("sep", ","), dialect.get("newline", "\n")
+        options = {"sep": sep, "decimal": dialect.get("decimal", "."), "lineterminator": newline}
+        encoding = "utf-8-sig" if dialect.get("bom") else "utf-8"
+
+        def write(tmp: Path) -> None:
+            with open(tmp, "w", encoding=encoding, newline="") as handle:
+                if dialect.get("sep_line"):
+                    handle.write(f"sep={sep}{newline}")
+                frame.to_csv(handle, index=False, **options)
+
+        write_atomic(path, write)

@@ -43,7 +43,7 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
 
     ``as_text=True`` (a table that is written out again, as by ``calibrate apply``): every CSV
     column is kept as the text it holds (and ``frame.attrs["csv_dialect"]`` records the
-    separator, the decimal mark, whether the file started with a byte-order mark and its line end), with nothing taken for a missing value in the other
+    separator, the decimal mark, whether the file started with a byte-order mark or a ``sep=X`` line, and its line end), with nothing taken for a missing value in the other
     columns (``NA``, ``None``, ``000123`` and ``12345678901234567890`` stay as written), and
     decimal commas stay commas (:func:`numeric_column` reads them); a Parquet file's index,
     when it has a named or non-default one, becomes an ordinary column so that it is written
@@ -94,6 +94,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                 names = _csv_header(path, encoding, sep) or []
                 text_options = {"keep_default_na": False, "na_values": {
                     c: (sorted(_MISSING_WORDS) if c not in text else [""]) for c in names}}
+            if _has_sep_line(path, encoding):
+                text_options["skiprows"] = 1
             frame = _read_csv(pd, path, dtype=dtype, sep=sep, decimal=decimal,
                               encoding=encoding, **text_options)
             if as_text:  # kept as written; numeric_column reads the decimal commas
@@ -102,7 +104,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                 # opens the same way in the same spreadsheet
                 frame.attrs["csv_dialect"] = {"sep": sep, "decimal": decimal,
                                               "bom": _starts_with_bom(path),
-                                              "newline": _line_end(path, encoding)}
+                                              "newline": _line_end(path, encoding),
+                                              "sep_line": _has_sep_line(path, encoding)}
             elif decimal == ",":  # columns read as text keep their decimal commas: make dots
                 for column in set(exact) & set(frame.columns):
                     frame[column] = frame[column].str.replace(",", ".", regex=False)
@@ -182,7 +185,7 @@ def _blank_lines_as_missing(pd: Any, frame: Any, path: Path, encoding: str, sep:
     try:
         with _open_text(path, encoding) as handle:
             blank = [not any(field.strip() for field in record)
-                     for record in csv.reader(handle, delimiter=sep)]
+                     for record in _records(handle, sep)]
     except _UNREADABLE:
         return frame
     filled = [i for i, b in enumerate(blank) if not b]
@@ -204,7 +207,8 @@ def _check_field_counts(path: Path, sep: str, encoding: str) -> None:
         with _open_text(path, encoding) as handle:
             reader = csv.reader(handle, delimiter=sep)
             for row in reader:
-                if not any(field.strip() for field in row):
+                if not any(field.strip() for field in row) or (
+                        reader.line_num == 1 and _SEP_LINE.fullmatch(sep.join(row))):
                     continue
                 if header is None:
                     header = len(row)
@@ -293,10 +297,12 @@ def _starts_with_bom(path: Path) -> bool:
 
 
 def _line_end(path: Path, encoding: str) -> str:
-    """The end of the first line of a CSV file: "\\r\\n" (Windows) or "\\n"."""
+    """The end of the header line of a CSV file: "\\r\\n" (Windows) or "\\n"."""
     try:
         with _open_text(path, encoding, errors="replace") as handle:
             first = handle.readline()
+            if _SEP_LINE.fullmatch(first.rstrip("\r\n")):
+                first = handle.readline()  # the header's, not the "sep=X" line's
     except _UNREADABLE:
         return "\n"
     return "\r\n" if first.endswith("\r\n") else "\n"
@@ -307,7 +313,7 @@ def _csv_header(path: Path, encoding: str, sep: str) -> list[str] | None:
     repeated names, so they are read here once more)."""
     try:
         with _open_text(path, encoding) as handle:
-            for row in csv.reader(handle, delimiter=sep):
+            for row in _records(handle, sep):
                 if any(field.strip() for field in row):
                     return row
     except _UNREADABLE:
@@ -325,25 +331,55 @@ _DECIMAL_COMMA = re.compile(
 _SCAN_CHUNK = 1 << 20
 
 
+#: the first line some spreadsheets write (and read) to name the separator: sep=; or sep=,
+_SEP_LINE = re.compile(r"[ \t]*sep=([,;\t|])[ \t]*")
+
+
+def _has_sep_line(path: Path, encoding: str) -> bool:
+    """True when the file's first line is a spreadsheet's ``sep=X`` line (skipped on reading)."""
+    try:
+        with _open_text(path, encoding, errors="replace") as handle:
+            return bool(_SEP_LINE.fullmatch(handle.readline().rstrip("\r\n")))
+    except _UNREADABLE:
+        return False
+
+
+def _records(handle: Any, sep: str) -> Any:
+    """``csv.reader`` rows of an open CSV file, without a first ``sep=X`` line."""
+    reader = csv.reader(handle, delimiter=sep)
+    first = True
+    for row in reader:
+        if first and len(row) <= 2 and _SEP_LINE.fullmatch(sep.join(row)):
+            first = False
+            continue
+        first = False
+        yield row
+
+
 def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
     """Separator and decimal mark of a CSV file.
 
     Comma-separated unless the header has no comma but a semicolon or a tab (spreadsheets in
-    many European locales write ``;`` with decimal commas). With ``;`` the decimal mark is a
+    many European locales write ``;`` with decimal commas), or as a first ``sep=X`` line says. With ``;`` the decimal mark is a
     comma when any field of the file is a number written with one (``0,42``, ``4,757E-02``):
     the whole file is looked at, since a sorted file may start with many rows of whole numbers.
     """
     try:
         with _open_text(path, encoding, errors="replace") as handle:
             header = handle.readline()
-            while header and not header.strip():
-                header = handle.readline()
-            if "," in header:
-                return ",", "."
-            if "\t" in header:
-                return "\t", "."
-            if ";" not in header:
-                return ",", "."
+            declared = _SEP_LINE.fullmatch(header.rstrip("\r\n"))
+            if declared:  # a spreadsheet's "sep=;" line names the separator
+                if declared.group(1) != ";":
+                    return declared.group(1), "."
+            else:
+                while header and not header.strip():
+                    header = handle.readline()
+                if "," in header:
+                    return ",", "."
+                if "\t" in header:
+                    return "\t", "."
+                if ";" not in header:
+                    return ",", "."
             while True:
                 chunk = handle.read(_SCAN_CHUNK)
                 if not chunk:
