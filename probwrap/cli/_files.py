@@ -152,9 +152,11 @@ def write_table(frame: Any, path: str | Path, *, dialect: dict[str, Any] | None 
         encoding = "utf-8-sig" if dialect.get("bom") else "utf-8"
 
         def write(tmp: Path) -> None:
-            with open(tmp, "w", encoding=encoding, newline="") as handle:
-                if dialect.get("sep_line"):
-                    handle.write(f"sep={sep}{newline}")
-                frame.to_csv(handle, index=False, **options)
+            mode = "w"
+            if dialect.get("sep_line"):
+                with open(tmp, "w", encoding=encoding, newline="") as handle:
+                    handle.write(f"sep={sep}{newline}")  # after the byte-order mark, if any
+                mode = "a"  # (appending writes no second byte-order mark)
+            frame.to_csv(tmp, index=False, mode=mode, encoding=encoding, **options)
 
         write_atomic(path, write)
