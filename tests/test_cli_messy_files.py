@@ -252,3 +252,29 @@ def test_spreadsheet_sep_line_is_read_and_written_back(scored, capsys, tmp_path,
     back = pd.read_csv(tmp_path / "o.csv", skiprows=1, sep=sep, decimal=decimal,
                        float_precision="round_trip")
     np.testing.assert_array_equal(back["score"].to_numpy(), frame["score"].to_numpy())
+
+
+def test_parquet_rows_are_numbered_from_the_first_row(scored, capsys):
+    """A Parquet file has no header line: its 0-based row 3 is 'row 4 (counting the first row
+    as row 1)', not 'row 5 (counting the header as row 1)' as in a CSV file."""
+    root, frame = scored
+    labels = frame["label"].astype("Int64")
+    labels.iloc[3] = pd.NA
+    path = root / "missing_label.parquet"
+    frame.assign(label=labels).to_parquet(path)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "column 'label', row 4 (counting the first row as row 1): the label is missing" in err
+    weights = frame["w"].copy()
+    weights.iloc[6] = -1.0
+    path = root / "negative_weight.parquet"
+    frame.assign(w=weights).to_parquet(path)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "column 'w', row 7 (counting the first row as row 1): -1.0 is a negative weight" in err
+    # the same row of a CSV file keeps the spreadsheet's numbering
+    path = root / "negative_weight.csv"
+    frame.assign(w=weights).to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "column 'w', row 8 (counting the header as row 1): -1.0 is a negative weight" in err

@@ -118,6 +118,15 @@ def table_kind(path: Path) -> str:
     return "Parquet" if path.suffix.lower() in PARQUET_SUFFIXES else "CSV"
 
 
+def row_number(path: str | Path, row: int) -> str:
+    """Where the 0-based data row ``row`` of a table is, in a message: "row 7 (counting the
+    header as row 1)" in a CSV file (as a spreadsheet numbers it), "row 6 (counting the first
+    row as row 1)" in a Parquet file (which has no header line)."""
+    if table_kind(Path(path)) == "Parquet":
+        return f"row {row + 1} (counting the first row as row 1)"
+    return f"row {row + 2} (counting the header as row 1)"
+
+
 def one_line(exc: BaseException) -> str:
     """An exception's text on one line."""
     return " ".join(str(exc).split())

@@ -45,6 +45,7 @@ from ._common import (
     check_ranking,
     check_row_count,
     not_a_number,
+    row_number,
     warn_line,
     weight_summary,
     whole_number,
@@ -102,8 +103,8 @@ def _batch_labels(frame: Any, args: argparse.Namespace, n: int) -> np.ndarray | 
     col = frame[args.batch_column]
     if col.isna().any():
         row = int(np.flatnonzero(col.isna().to_numpy())[0])
-        raise DataError(f"{args.unlabelled}: column {plain(args.batch_column)!r}, row {row + 2} "
-                        "(counting the header as row 1) has no batch label (--batch-column)")
+        raise DataError(f"{args.unlabelled}: column {plain(args.batch_column)!r}, "
+                        f"{row_number(args.unlabelled, row)} has no batch label (--batch-column)")
     labels = col.astype(str).to_numpy()
     _warn_out_of_order(col, labels, args)
     return labels

@@ -25,6 +25,7 @@ from ._common import (
     clean,
     not_a_number,
     require,
+    row_number,
     shown,
     warn_line,
     weight_summary,
@@ -217,7 +218,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         bad = np.abs(sums - 1.0) > 1e-6
         if bad.any():
             row = int(np.flatnonzero(bad)[0])
-            raise DataError(f"{path}: row {row + 2} (counting the header as row 1): the class "
+            raise DataError(f"{path}: {row_number(path, row)}: the class "
                             f"probabilities sum to {shown(sums[row])}, not 1")
         return P
 
@@ -309,8 +310,8 @@ def _class_labels(frame, args: argparse.Namespace, columns: list[str]) -> np.nda
     missing = raw.isna().to_numpy()
     if missing.any():
         row = int(np.flatnonzero(missing)[0])
-        raise DataError(f"{args.scores}: column {shown(args.label_column)}, row {row + 2} "
-                        "(counting the header as row 1): the label is missing")
+        raise DataError(f"{args.scores}: column {shown(args.label_column)}, "
+                        f"{row_number(args.scores, row)}: the label is missing")
     as_text = raw.astype(str).to_numpy(dtype=object)
     numeric = pd.to_numeric(raw, errors="coerce").notna().to_numpy()
     named = np.isin(as_text, columns)
@@ -358,8 +359,8 @@ def _group_labels(frame, column: str, path: str, flag: str = "--group-column") -
     missing = raw.isna().to_numpy()
     if missing.any():
         row = int(np.flatnonzero(missing)[0])
-        raise DataError(f"{path}: column {shown(column)}, row {row + 2} (counting the header as "
-                        f"row 1) has no group ({flag}); give every row a group (e.g. "
+        raise DataError(f"{path}: column {shown(column)}, {row_number(path, row)} has no "
+                        f"group ({flag}); give every row a group (e.g. "
                         "'unknown')")
     return raw.astype(str).to_numpy()
 

@@ -24,6 +24,7 @@ from ._common import (
     clean,
     one_line,
     require,
+    row_number,
     shown,
     table_kind,
     warn_line,
@@ -411,7 +412,7 @@ def no_column(frame: Any, column: str, path: str | Path, flag: str) -> DataError
 
 
 def _row(path: str | Path, column: str, row: int) -> str:
-    return f"{path}: column {shown(column)}, row {row + 2} (counting the header as row 1)"
+    return f"{path}: column {shown(column)}, {row_number(path, row)}"
 
 
 def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str) -> np.ndarray:
@@ -591,8 +592,8 @@ def read_weights(frame: Any, column: str | None, path: str | Path,
     bad = w < 0
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
-        raise DataError(f"{path}: column {shown(column)}, row {row + 2} (counting the header as "
-                        f"row 1): {shown(w[row])} is a negative weight ({flag})")
+        raise DataError(f"{path}: column {shown(column)}, {row_number(path, row)}: "
+                        f"{shown(w[row])} is a negative weight ({flag})")
     if not np.any(w > 0):
         raise DataError(f"{path}: column {shown(column)} ({flag}) holds no positive weight")
     if relative:
