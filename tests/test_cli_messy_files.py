@@ -278,3 +278,32 @@ def test_parquet_rows_are_numbered_from_the_first_row(scored, capsys):
     code, _, err = _cutoff(capsys, path)
     assert code == 1
     assert "column 'w', row 8 (counting the header as row 1): -1.0 is a negative weight" in err
+
+
+def test_infinite_log_odds_point_to_the_probabilities(tmp_path, capsys):
+    """Log-odds computed from a random forest's vote shares are infinite where the share is 0
+    or 1: the message says where they come from and that --scale proba reads the shares
+    themselves (it said only "'inf' is not a finite number"); the shares run."""
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.ensemble import RandomForestClassifier
+    from sklearn.model_selection import train_test_split
+
+    X, y = load_breast_cancer(return_X_y=True)
+    X_fit, X_held, y_fit, y_held = train_test_split(X, y, test_size=0.5, random_state=0)
+    share = RandomForestClassifier(50, random_state=0).fit(X_fit, y_fit).predict_proba(
+        X_held)[:, 1]
+    assert np.any(share == 1.0) and np.any(share == 0.0)
+    with np.errstate(divide="ignore"):
+        log_odds = np.log(share) - np.log1p(-share)
+    pd.DataFrame({"score": log_odds, "label": y_held}).to_csv(tmp_path / "lo.csv", index=False)
+    pd.DataFrame({"score": share, "label": y_held}).to_csv(tmp_path / "p.csv", index=False)
+    code, _, err = run(capsys, "calibrate", "fit", "--scores", tmp_path / "lo.csv",
+                       "--score-column", "score", "--label-column", "label", "--scale",
+                       "log-odds", "--out", tmp_path / "m.json")
+    assert code == 1
+    assert "is not a finite number; an infinite log-odds comes from a probability of " \
+        "exactly 0 or 1" in err and "--scale proba" in err
+    code, _, err = run(capsys, "calibrate", "fit", "--scores", tmp_path / "p.csv",
+                       "--score-column", "score", "--label-column", "label",
+                       "--out", tmp_path / "m.json")
+    assert code == 0, err

@@ -80,7 +80,10 @@ def read_scores(frame: Any, column: str, path: str | Path, *, scale: str,
     """
     if scale == "proba":
         return probability_column(frame, column, path, flag=flag)
-    values = numeric_column(frame, column, path, flag=flag)
+    values = numeric_column(frame, column, path, flag=flag, infinite_hint=(
+        "; an infinite log-odds comes from a probability of exactly 0 or 1 (a forest's vote "
+        "share, a rounded score): give the probabilities with --scale proba instead, which "
+        "reads 0 and 1"))
     if (verb is not None and values.shape[0] >= 10 and values.min() >= 0.0
             and values.max() <= 1.0 and values.max() > values.min()):
         lo, hi = float(values.min()), float(values.max())

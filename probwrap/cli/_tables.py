@@ -415,8 +415,11 @@ def _row(path: str | Path, column: str, row: int) -> str:
     return f"{path}: column {shown(column)}, {row_number(path, row)}"
 
 
-def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str) -> np.ndarray:
+def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
+                   infinite_hint: str = "") -> np.ndarray:
     """One column as finite floats, or a DataError naming the file, column and first bad row.
+
+    ``infinite_hint`` is added to the message when the first bad value is an infinite number.
 
     Text is converted with NumPy's correctly rounded parser (every float written with enough
     digits reads back exactly).
@@ -453,8 +456,9 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str) -> n
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
         raw_value = series.iloc[row]
+        hint = infinite_hint if np.isinf(values[row]) else ""
         what = "the value is missing" if pd.isna(raw_value) else (
-            f"{shown(raw_value)} is not a finite number{_number_hint(raw_value)}"
+            f"{shown(raw_value)} is not a finite number{hint or _number_hint(raw_value)}"
         )
         raise DataError(f"{_row(path, column, row)}: {what}")
     return values
