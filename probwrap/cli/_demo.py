@@ -99,6 +99,7 @@ def run_demo(
         X_unlabelled=winter.data, prior_shift=shift, batch_size=max(len(winter.target) // 5, 1),
         n_resamples=100, random_state=seed,
         title="Parcel damage: inspect or ship (invented demo data)",
+        source=f"the invented parcel scenario (probwrap.datasets.make_parcels, seed {seed})",
     )
     step("writing the report")
     target = _write_page(Path(out), page)
@@ -238,6 +239,7 @@ def run_three_way_demo(
         model=policy, X=Xt, y=yt, X_unlabelled=Xw, prior_shift=shift,
         class_names=summer.target_names, n_resamples=100, random_state=seed,
         title="Parcels: ship, repack or hold (invented demo data)",
+        source=f"the invented parcel scenario (probwrap.datasets.make_parcels, seed {seed})",
     )
     step("writing the report")
     target = _write_page(Path(out), page)

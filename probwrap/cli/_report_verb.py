@@ -365,6 +365,32 @@ def _group_labels(frame, column: str, path: str, flag: str = "--group-column") -
     return raw.astype(str).to_numpy()
 
 
+def _made_from(args: argparse.Namespace) -> str:
+    """The input files and the columns read from them, for the line under the report's title
+    (a page passed on without its command line still says what it was made from)."""
+    def col(name: str | None) -> str:
+        return repr(plain(name))
+
+    read = []
+    if args.class_columns is not None:
+        read.append(f"class columns {', '.join(col(c) for c in _split(args.class_columns))}")
+    elif args.score_column is not None:
+        read.append(f"scores {col(args.score_column)}"
+                    + (" (log-odds)" if getattr(args, "scale", "proba") == "log-odds" else ""))
+    for flag, what in (("label_column", "labels"), ("time_column", "times"),
+                       ("event_column", "events"), ("weight_column", "weights"),
+                       ("group_column", "groups"), ("cell_column", "cells")):
+        name = getattr(args, flag, None)
+        if name is not None:
+            read.append(f"{what} {col(name)}")
+    text = f"{args.scores} ({', '.join(read)})"
+    if args.unlabelled is not None:
+        column = args.unlabelled_score_column or args.score_column
+        text += (f"; unlabelled rows from {args.unlabelled}"
+                 + (f" (scores {col(column)})" if column is not None else ""))
+    return text
+
+
 def _build_and_write(args: argparse.Namespace, stages: Stages, **inputs):
     """Compute the report, then write it atomically; library errors become DataErrors."""
     from probwrap.report import build_report
@@ -377,7 +403,7 @@ def _build_and_write(args: argparse.Namespace, stages: Stages, **inputs):
         try:
             content, page = build_report(
                 n_bins=args.bins, n_resamples=args.resamples, random_state=args.seed,
-                title=args.title, **inputs,
+                title=args.title, source=_made_from(args), **inputs,
             )
         except (ValueError, FloatingPointError, OverflowError) as exc:
             raise DataError(f"{args.scores}: the report cannot be made ({clean(str(exc))})"

@@ -38,7 +38,12 @@ def build_report(**kwargs: Any) -> tuple[Any, str]:
 
     Keyword arguments as for :func:`write_report` (without ``path``).
     """
+    source = kwargs.pop("source", None)
+    if source is not None and not isinstance(source, str):
+        raise TypeError(f"source must be a str naming where the rows came from, got "
+                        f"{type(source).__name__}")
     content = collect_content(**kwargs)
+    content.source = source
     return content, render_html(content, make_figures(content))
 
 
@@ -76,6 +81,7 @@ def write_report(
     alarm_decision_interval: float | None = None,
     cells: Any = None,
     score_scale: str = "proba",
+    source: str | None = None,
 ) -> ReportContent | MulticlassReportContent:
     """Write a self-contained HTML report and return the numbers it shows.
 
@@ -158,6 +164,10 @@ def write_report(
     random_state : int, RandomState or None, default=0
         Seed of the bootstraps.
     title : str, default="probwrap report"
+    source : str, optional
+        Where the rows came from (a file and its columns), printed under the title so that a
+        reader of the page can tell what it was made from; ``probwrap report`` fills it in
+        with the input files and the columns it read. Kept as ``content.source``.
     row_costs : array-like of shape (n, n_classes, n_actions), optional
         One cost matrix per labelled row (e.g. from each parcel's value); the report shows
         their weighted mean. A :class:`~probwrap.CostPolicyWrapper` with costs given as a
@@ -268,6 +278,7 @@ def write_report(
         guarantee=guarantee, horizon_labels=horizon_labels, time=time, event=event,
         horizon=horizon, alarm_reference=alarm_reference,
         alarm_decision_interval=alarm_decision_interval, cells=cells, score_scale=score_scale,
+        source=source,
     )
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)

@@ -137,6 +137,8 @@ class ReportContent:
     #: the labelled cells the prevalence interval and shift test counted as units (None: the
     #: labelled rows were counted as independent); see :func:`._cells.prevalence_unit_words`
     prevalence_cells: int | None = None
+    #: where the rows came from (a file and its columns), shown under the title
+    source: str | None = None
 
 
 def _inner_chain(model: Any) -> list[Any]:

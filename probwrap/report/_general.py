@@ -107,6 +107,8 @@ class MulticlassReportContent:
     #: (:class:`~probwrap.report._alarm_chart.BatchAlarm`; two classes: the second only)
     batch_table: np.ndarray | None = None
     class_alarms: dict[int, Any] = field(default_factory=dict)
+    #: where the rows came from (a file and its columns), shown under the title
+    source: str | None = None
 
     # the binary report's names, so that shared code (glance, demo summary) can read either
     @property

@@ -491,7 +491,9 @@ def render_html(c: Any, figures: dict[str, str]) -> str:
         '<meta name="viewport" content="width=device-width, initial-scale=1">'
         f"<title>{_text(c.title)}</title><style>{_CSS}</style></head><body>"
         f'<header class="pw-head"><h1>{_text(c.title)}</h1>'
-        f"<p>Calibration, decision rule and prevalence &middot; probwrap {__version__}</p>"
+        + (f'<p class="pw-source" id="made-from">Made from {_text(c.source)}</p>'
+           if getattr(c, "source", None) else "")
+        + f"<p>Calibration, decision rule and prevalence &middot; probwrap {__version__}</p>"
         "</header>"
         '<nav class="pw-nav"><a href="#calibration">Calibration</a>'
         '<a href="#decisions">Decisions</a><a href="#prevalence">'
