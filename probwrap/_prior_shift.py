@@ -204,8 +204,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         labelled rows (``estimator_``). ``"fold_models"``: each fold model of the
         cross-fitting, its posteriors through the same calibration, averaged with the folds'
         shares of the labelled weight — the models the calibration was fitted on and whose
-        average the shift test and the interval already compare; ``adapt`` then estimates
-        from, and re-weights, that average. ``"auto"``: the rule of
+        average the shift test and the interval already compare; ``adapt`` then re-weights
+        that average. Whichever predicts, ``adapt`` estimates from the fold models' own
+        calibrated posteriors (the fold-averaged root of the prior's score equation, the
+        interval's centre; since 4 December 2026, before from the posteriors it re-weights:
+        docs/prior_shift.md, "The point estimate after a refit"). ``"auto"``: the rule of
         :class:`~probwrap.CalibrationWrapper`: the fold models when their score spreads on
         the labelled rows vary from fold to fold (``fold_spread_variation_`` above 0.10)
         unless the refit spreads more than 1.1 times as widely as every fold model. Measured
@@ -239,7 +242,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     prior_estimator_ : probwrap.shift.PriorEstimator
         The array-core estimator behind ``adapt`` and ``monitor``.
     target_prior_ : ndarray of shape (n_classes,)
-        Priors estimated by the last ``adapt`` (set by ``adapt`` only).
+        Priors estimated by the last ``adapt`` (set by ``adapt`` only). With a base model
+        refit here and the labelled rows kept, read from the fold models' calibrated
+        posteriors of the ``adapt`` rows (each fold model weighted by its fold's share), the
+        posteriors the calibration was fitted on, not the refit model's (since 4 December
+        2026; on R's ggplot2 diamonds with gradient boosting at 2,000 labelled rows the mean
+        estimate moved from 0.180 to 0.200 for a true 0.2). More than 20,000 Dask or Spark
+        ``adapt`` rows still read the refit model (docs/prior_shift.md, "The point estimate
+        after a refit").
     target_prior_interval_ : ndarray of shape (n_classes, 2) or None
         Interval of the class priors of the ``adapt`` rows, carrying the error of both the
         unlabelled and the labelled rows (set by ``adapt``; see ``interval``). With more than
@@ -557,8 +567,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         centred per row, on the labelled rows). With the fold models, the
         calibrated posteriors of every fold model are averaged with the folds' shares of the
         labelled weight, the mix the shift test and the interval already compare, and
-        ``adapt``'s estimate reads that same average (``PriorEstimator`` told so by
-        ``_fold_point``)."""
+        ``adapt`` re-weights that same average (``PriorEstimator`` told so by
+        ``_fold_point``; its estimate reads the fold models' own posteriors either way)."""
         from ._calibration_wrapper import _SPREAD_CHECK_MAX_ROWS
         from .calibration._logodds import clip_from_smallest, proba_to_log_proba
         from .shift._interval import fold_shares

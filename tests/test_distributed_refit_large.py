@@ -100,12 +100,16 @@ def test_large_binary_adapt_reads_the_fold_models_as_in_memory(cancer, tally_pat
     # behind the refit model's estimate); the shift test reads the sums at the source prior
     np.testing.assert_allclose(dist.target_prior_interval_, mem.target_prior_interval_,
                                rtol=0, atol=1e-6)
-    np.testing.assert_allclose(dist.target_prior_, mem.target_prior_, rtol=0, atol=1e-8)
     assert dist.shift_statistic_ == pytest.approx(mem.shift_statistic_, rel=1e-9)
-    assert dist.adaptation_weight_ == pytest.approx(mem.adaptation_weight_, abs=1e-8)
     # the fold models made the difference: the refit model's scores alone (the path before)
     est = model.prior_estimator_
     without = _quiet(lambda: est.estimate(model.estimator_.predict_proba(X_new), sw))
+    # the point estimate here still reads the refit model's tally (each row's fold-model
+    # posteriors are not kept where the rows live): the in-memory estimate from the refit
+    # model's posteriors, not the fold-averaged root that adapt in memory gives since 4
+    # December 2026 (docs/prior_shift.md, "The point estimate after a refit")
+    np.testing.assert_allclose(dist.target_prior_, without.prior, rtol=0, atol=1e-8)
+    assert np.max(np.abs(dist.target_prior_ - mem.target_prior_)) > 1e-3
     assert abs(without.shift_statistic - mem.shift_statistic_) > 0.3
     assert np.max(np.abs(without.interval - mem.target_prior_interval_)) > 1e-3
 

@@ -264,9 +264,11 @@ def test_percentile_bootstrap_resamples_the_fold_models_scores(cancer_split):
     # the refit model's posteriors alone (the earlier bootstrap) give another interval
     earlier = interval(refit_new[None], np.ones(1))
     assert np.max(np.abs(earlier - expected)) > 2e-3
-    # and its point estimate still reads the refit model: brentq on the refit posteriors
-    assert res.ml_prior[1] == pytest.approx(
-        root(np.ones(X_new.shape[0]), refit_new[None], np.ones(1)), abs=1e-8)
+    # and its point estimate is the same fold-averaged root on the rows themselves (since 4
+    # December 2026; before, brentq on the refit model's posteriors, which differs here)
+    ones = np.ones(X_new.shape[0])
+    assert res.ml_prior[1] == pytest.approx(root(ones, fold_new, share), abs=1e-8)
+    assert abs(root(ones, refit_new[None], np.ones(1)) - res.ml_prior[1]) > 1e-3
 
 
 def test_multiclass_bbse_bootstrap_resamples_the_fold_models_posteriors():
@@ -425,8 +427,11 @@ def test_shift_test_compares_fold_averaged_scores(cancer_split):
         without = est.estimate(proba, interval=False)
     assert model.shift_statistic_ == pytest.approx(with_folds.shift_statistic, rel=1e-12)
     assert abs(with_folds.shift_statistic - without.shift_statistic) > 1e-3
-    # the point estimate reads the refit model's posteriors only
-    np.testing.assert_array_equal(with_folds.prior, without.prior)
+    # the point estimate reads the fold models too (since 4 December 2026; before, the refit
+    # model's posteriors only, as `without` still does)
+    np.testing.assert_allclose(model.prior_estimate_.ml_prior, with_folds.ml_prior, rtol=0,
+                               atol=1e-9)
+    assert abs(with_folds.ml_prior[1] - without.ml_prior[1]) > 1e-3
 
 
 def test_multiclass_refit_interval_is_the_fold_averaged_moment_interval():
@@ -500,3 +505,51 @@ def test_many_labelled_rows_keep_no_fold_models_unless_asked(cancer_split, monke
     np.testing.assert_allclose(default.target_prior_interval_, kept.target_prior_interval_,
                                atol=2e-3)
     assert np.max(np.abs(carried - kept.target_prior_interval_)) > 1e-4
+
+
+@pytest.mark.parametrize("predict_with", ["refit", "fold_models"])
+def test_point_estimate_is_the_fold_averaged_root(cancer_split, predict_with):
+    # The point estimate after a refit (since 4 December 2026): the root of the prior's score
+    # equation with every unlabelled row's score averaged over the fold models, weighted by the
+    # folds' shares of the labelled rows, sum_i sum_k s_k u(c(p_ik); t) = 0 with c the fitted
+    # calibration (bias-corrected temperature scaling) and u the score of Saerens, Latinne &
+    # Decaestecker's (2002) likelihood, whose zero is their EM fixed point (eqs. 2.9-2.10):
+    # the fold models rebuilt here as scikit-learn clones on the wrapper's folds, the root
+    # found by SciPy's brentq. Before, the root read the refit model's posteriors through the
+    # calibration fitted on the fold models' held-out ones (about 0.001 away here, 1,000 times
+    # the tolerance below; on diamonds at 2,000 labelled rows a bias of -0.02,
+    # docs/prior_shift.md).
+    from scipy.optimize import brentq
+
+    X, y, X_new = cancer_split
+    base = make_pipeline(StandardScaler(), KNeighborsClassifier(25))
+    model = _fit_adapt(PriorShiftWrapper(base, cv=3, random_state=0, prior_strength=0.0,
+                                         predict_with=predict_with), X, y, X_new)
+    assert model.predicted_with_ == predict_with
+    est = model.prior_estimator_
+    fold, fold_raw = _direct_folds(base, X, y, X_new, seed=0)
+    np.testing.assert_array_equal(fold, est._src_fold)
+    src = np.bincount(y, minlength=2) / y.shape[0]
+    np.testing.assert_allclose(est.source_prior_, src, atol=1e-12)
+    share = np.bincount(fold, minlength=3) / y.shape[0]
+
+    def root(proba, weights):  # proba (K, n, 2): calibrated, averaged with `weights`
+        q = proba / src
+        return brentq(lambda t: sum(
+            s_k * np.mean((q_k[:, 1] - q_k[:, 0]) / ((1 - t) * q_k[:, 0] + t * q_k[:, 1]))
+            for s_k, q_k in zip(weights, q, strict=True)), 1e-9, 1 - 1e-9, xtol=1e-13)
+
+    calibrated = np.stack([est.calibrate(f) for f in fold_raw])
+    expected = root(calibrated, share)
+    assert model.prior_estimate_.ml_prior[1] == pytest.approx(expected, abs=1e-6)
+    assert model.target_prior_[1] == pytest.approx(expected, abs=1e-6)
+    # the rule before: the refit model's calibrated posteriors (or, predicting with the fold
+    # models, their average), measurably another share
+    refit = est.calibrate(model.estimator_.predict_proba(X_new))[None]
+    averaged = np.tensordot(share, calibrated, axes=1)[None]
+    before = refit if predict_with == "refit" else averaged
+    assert abs(root(before, np.ones(1)) - expected) > 5e-4
+    # the interval holds it without widening: the score interval's centre, the same equation
+    # with the labelled rows' fold-reweighted class means subtracted, is within 0.01
+    lo, hi = model.target_prior_interval_[1]
+    assert lo < expected < hi

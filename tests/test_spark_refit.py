@@ -132,10 +132,17 @@ def test_multiclass_adapt_on_spark_is_the_in_memory_adapt(spark, digits, request
     mem = _quiet(lambda: copy.deepcopy(model).adapt(X_new))
     dist, messages = _messages(lambda: copy.deepcopy(model).adapt(frame))
     assert not [m for m in messages if REFIT in m]
-    _same(dist, mem)
     # and the refit model alone gives another shift test
     without = _quiet(lambda: model.prior_estimator_.estimate(model.estimator_.predict_proba(
         X_new)))
+    if path == "rows":
+        _same(dist, mem)
+    else:
+        # the reductions' point estimate still reads the refit model's posteriors, as on Dask
+        # (tests/test_distributed_refit.py; docs/prior_shift.md, "The point estimate after a
+        # refit"); the shift test reads the fold models as in memory
+        np.testing.assert_allclose(dist.target_prior_, without.prior, atol=1e-6)
+        assert dist.shift_statistic_ == pytest.approx(mem.shift_statistic_, rel=0, abs=1e-9)
     assert abs(without.shift_statistic - dist.shift_statistic_) > 0.05
 
 
