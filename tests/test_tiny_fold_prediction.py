@@ -1,8 +1,9 @@
 """PriorShiftWrapper(predict_with=...): the fold models of its cross-fitting predict where
 their scales vary from fold to fold, as CalibrationWrapper's do, and ``adapt`` re-weights
-those same averaged posteriors (estimating from the fold models' own posteriors); CalibrationWrapper keeps a refit that
-spreads wider than every fold model (docs/calibration.md, "Which model predicts";
-docs/prior_shift.md, "Which model predicts after cross-fitting")."""
+those same averaged posteriors (estimating from the fold models' own posteriors);
+CalibrationWrapper keeps a refit that spreads wider than every fold model
+(docs/calibration.md, "Which model predicts"; docs/prior_shift.md, "Which model predicts
+after cross-fitting")."""
 
 from __future__ import annotations
 
