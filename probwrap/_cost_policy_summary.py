@@ -86,7 +86,7 @@ def _summary_interval(summary: dict, matrix, share, policy: Any) -> Any:
     from sklearn.utils import check_random_state
 
     from .decision import CutoffInterval
-    from .scale._bootstrap import tally_exact_interval
+    from .scale._entry import tally_exact_interval
 
     tally = summary["weighted"]
     counts, row_counts = tally.counts, summary["rows"]

@@ -389,8 +389,20 @@ def test_cutoff_text_explains_a_negative_cutoff(tmp_path, capsys):
     assert json.loads(out)["cutoff"] < 0
     code, out, err = run(capsys, *args)
     assert "a cutoff below 0 acts on every row" in out
-    # a cutoff inside (0, 1): no such line
+    # a cutoff inside (0, 1) whose exact-test range reaches below 0 too (8 rows cannot show
+    # that acting on the three rows scored 0 costs more): the line is there for that range
     code, out, err = run(capsys, *args[:-4], "--cost-fn", 1, "--resamples", 0)
+    assert code == 0 and "exact-test range      [-" in out and "below 0 acts on every" in out
+    # zeros that are six negatives: every cutoff the text quotes lies in [0, 1], no such line
+    p0 = np.array([0.0] * 6 + [0.1, 0.2, 0.4, 0.6, 0.9])
+    y0 = np.array([0] * 6 + [1, 0, 1, 1, 1])
+    pd.DataFrame({"risk": p0, "hit": y0}).to_csv(tmp_path / "g.csv", index=False)
+    plain = ["cutoff", "--scores", tmp_path / "g.csv", "--score-column", "risk",
+             "--label-column", "hit", "--cost-fp", 1, "--cost-fn", 1, "--resamples", 0]
+    code, out, err = run(capsys, *plain, "--format", "json")
+    got = json.loads(out)
+    assert code == 0 and 0 <= got["cutoff"] and 0 <= got["cutoff_exact_range"][0]
+    code, out, err = run(capsys, *plain)
     assert code == 0 and "below 0" not in out
 
 

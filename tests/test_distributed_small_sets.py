@@ -274,8 +274,9 @@ def test_dask_small_multiclass_set_with_clip_or_decision_values_is_its_rows_fit(
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", UserWarning)
             warnings.simplefilter("error", BinnedFitWarning)
-            dsk = CalibrationWrapper(model, **kw).fit(X_dask, y_dask)
-            mem = CalibrationWrapper(model, **kw).fit(X_lab, y_lab)
+            # the same seed: auto's folds over the held-out rows are drawn at random otherwise
+            dsk = CalibrationWrapper(model, random_state=0, **kw).fit(X_dask, y_dask)
+            mem = CalibrationWrapper(model, random_state=0, **kw).fit(X_lab, y_lab)
         assert dsk.method_ == mem.method_
         np.testing.assert_allclose(dsk.predict_proba(X_new), mem.predict_proba(X_new), rtol=0,
                                    atol=1e-12)

@@ -16,7 +16,7 @@ from __future__ import annotations
 from typing import Any
 
 from . import _dask, _multiclass, _multiclass_wrappers, _rows
-from ._bootstrap import tally_cutoff_interval, tally_prior_interval
+from ._bootstrap import tally_cutoff_interval, tally_exact_interval, tally_prior_interval
 from ._build import tally_scores
 from ._dask import owner_resolution
 from ._tally import _check_resolution as check_resolution
@@ -36,6 +36,7 @@ __all__ = [
     "owner_resolution",
     "replicate_seed",
     "tally_cutoff_interval",
+    "tally_exact_interval",
     "tally_prior_interval",
     "tally_scores",
     "unlabelled_proba_from_dask",
