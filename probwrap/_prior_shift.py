@@ -866,8 +866,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             proba, sample_weight, target, folds = unlabelled_proba_from_dask(
                 self.estimator_, X, sample_weight, n_replicates=est.n_resamples,
                 random_state=rs, resolution=owner_resolution(self), folds=self._fold_scorer(),
-                # more rows: the fold models' scores as sums for the score interval and test
-                moments_of=est if self.interval == "score" and not multiclass else None,
+                # more rows: the fold models' scores as sums for the score interval and test,
+                # and as a tally of every row once per fold model for the estimate (unless a
+                # bootstrap interval draws from the refit model's tally: then all read it)
+                moments_of=est if self.interval == "score" or est.n_resamples == 0 else None,
             )
         else:
             proba = self._inner_output(X, "predict_proba")
@@ -902,7 +904,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         December 2026). The interval then leaves out how much the refit moves with the
         labelled draw. Every interval on rows in memory, on a small Dask or Spark set, and on
         Dask or Spark rows of more than two classes reads the fold models, so it does not
-        warn."""
+        warn. On those rows the estimate and the shift test read the refit model's tally too
+        (with the score interval, or no interval, they read the fold models as in memory), and
+        the warning says so."""
         if (folds is not None or not getattr(self, "_refit_here", False)
                 or getattr(self.prior_estimator_, "_src_fold", None) is None
                 or self.prior_estimator_.n_resamples == 0):
@@ -916,8 +920,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             "carried by every interval except a bootstrap one (interval='bca' or "
             "'percentile') on more than 20,000 rows of two classes, whose replicates are "
             "drawn from a tally of the refit model's score that the fold models' scores of "
-            "each row cannot join: use interval='score' (the default) there, or fit the base "
-            "model elsewhere and pass it frozen.",
+            "each row cannot join. There the estimate (target_prior_) and the shift test read "
+            "that tally too, not every row once per fold model as adapt on the same rows in "
+            "memory does, so they differ from the in-memory result (by about 0.003 in the "
+            "positive share on breast cancer; docs/scale.md, 'A base model refit in memory, "
+            "then Dask or Spark rows'): use interval='score' (the default) there, which "
+            "matches memory, or fit the base model elsewhere and pass it frozen.",
             UserWarning,
             stacklevel=3,
         )

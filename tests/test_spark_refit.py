@@ -121,6 +121,10 @@ def test_large_binary_adapt_on_spark_reads_the_fold_score_sums(spark, cancer, ta
     np.testing.assert_allclose(dist.target_prior_interval_, mem.target_prior_interval_,
                                rtol=0, atol=1e-6)
     assert dist.shift_statistic_ == pytest.approx(mem.shift_statistic_, rel=1e-9)
+    # and the point estimate, from a tally of every row once per fold model taken on the
+    # executors in the same pass as the sums (before 4 December 2026: the refit model's tally)
+    np.testing.assert_allclose(dist.target_prior_, mem.target_prior_, rtol=1e-6, atol=0)
+    assert dist.adaptation_weight_ == pytest.approx(mem.adaptation_weight_, rel=1e-6)
 
 
 @pytest.mark.parametrize("path", ["rows", "sums"])
@@ -138,10 +142,10 @@ def test_multiclass_adapt_on_spark_is_the_in_memory_adapt(spark, digits, request
     if path == "rows":
         _same(dist, mem)
     else:
-        # the reductions' point estimate still reads the refit model's posteriors, as on Dask
-        # (tests/test_distributed_refit.py; docs/prior_shift.md, "The point estimate after a
-        # refit"); the shift test reads the fold models as in memory
-        np.testing.assert_allclose(dist.target_prior_, without.prior, atol=1e-6)
+        # the reductions read every row once per fold model, weighted by the fold's share, as
+        # in memory (since 4 December 2026; before, the refit model's posteriors: 0.002 off)
+        np.testing.assert_allclose(dist.target_prior_, mem.target_prior_, rtol=1e-9, atol=1e-12)
+        assert np.max(np.abs(without.prior - mem.target_prior_)) > 1e-3
         assert dist.shift_statistic_ == pytest.approx(mem.shift_statistic_, rel=0, abs=1e-9)
     assert abs(without.shift_statistic - dist.shift_statistic_) > 0.05
 

@@ -100,28 +100,59 @@ def scored_rows(rows: Any, scorer: FoldScorer, unit: float = 1.0) -> tuple:
 
 
 def _fold_moments_block(scorer: FoldScorer, calibrator: Any, src: np.ndarray, share: np.ndarray,
-                        grid: np.ndarray, unit: float, Xb: Any, wb: Any) -> Any:
+                        grid: np.ndarray, unit: float, resolution: float, averaged: bool,
+                        Xb: Any, wb: Any) -> tuple:
     """Sums of the fold-averaged score of one block of unlabelled two-class rows on the grid of
     priors (:func:`probwrap.shift._fold_moments.fold_score_block`), the fold models' posteriors
-    calibrated by the wrapper's map as in memory (``PriorEstimator.calibrate``)."""
+    calibrated by the wrapper's map as in memory (``PriorEstimator.calibrate``); and, from the
+    same predictions, a tally of the log-odds of every row once per fold model, weighted by the
+    row's weight times the fold's share (the rows the point estimate reads in memory,
+    ``PriorEstimator._estimating_rows``), in bins of ``resolution``; with ``averaged`` (the
+    wrapper predicts with the fold models' average posterior) the weighted sums of that
+    average, of the outer products of its shift-test scores and of its entropy (the harm
+    scale's inputs, as ``null_harm_scale`` reads them in memory)."""
     from ..shift._fold_moments import fold_score_block
+    from ._dask import _binary_scores
+    from ._tally import _tally_block
 
     raw = scorer.fold_proba(Xb)
     cal = raw if calibrator is None else np.stack([calibrator.predict(f) for f in raw])
     w = block_weights(wb, raw.shape[1])
     if unit != 1.0:
         w = w / unit
-    return fold_score_block(cal, share, src, w, grid)
+    n = raw.shape[1]
+    scores = (np.concatenate([_binary_scores(f, "predict_proba") for f in raw]) if n
+              else np.empty(0))
+    stacked = np.concatenate([s_k * w for s_k in share]) if n else np.empty(0)
+    # (a row of weight 0 stays out of every sum, as in memory)
+    tally = _tally_block(scores, None, stacked, 1, resolution)
+    harm: tuple = ()  # (sums combine entry by entry: none here)
+    if averaged:
+        avg = np.tensordot(share, cal, axes=1)
+        q = avg / src
+        u = q[:, 1:] - q[:, :1]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            entropy = -np.where(avg > 0, avg * np.log(avg), 0.0).sum(axis=1)
+        harm = (w @ avg, (u * w[:, None]).T @ u, np.array([w @ entropy]))
+    return fold_score_block(cal, share, src, w, grid), tally, harm
 
 
-def fold_moments(rows: Any, scorer: FoldScorer, est: Any, unit: float = 1.0) -> Any:
+def fold_moments(rows: Any, scorer: FoldScorer, est: Any, unit: float = 1.0,
+                 resolution: float | None = None) -> Any:
     """The sums of the fold-averaged score of many unlabelled two-class rows (Dask or Spark
     rows, see :func:`probwrap.scale._rows.rows_of`), for the shift test and the score interval
     of ``est`` (a fitted :class:`probwrap.shift.PriorEstimator` whose labelled rows are kept
     with their folds), in one more pass that scores every block with the fold models where it
-    lives; None where ``est`` would not read them (see ``PriorEstimator._fold_moments``)."""
+    lives; None where ``est`` would not read them (see ``PriorEstimator._fold_moments``).
+
+    The same pass tallies every row's log-odds once per fold model, weighted by the fold's
+    share (bins of ``resolution`` on the log-odds scale, the tally's default if None), and the
+    returned sums carry that tally's rows (``FoldScoreMoments.rows``): the rows the in-memory
+    point estimate reads after a refit, each row once per fold model (since 4 December 2026;
+    before, the point estimate of these rows read the refit model's tally)."""
     from ..shift._fold_moments import score_grid
     from ..shift._interval import fold_shares
+    from ._tally import DEFAULT_RESOLUTION
 
     fold = getattr(est, "_src_fold", None)
     source = est._source_rows()
@@ -130,5 +161,11 @@ def fold_moments(rows: Any, scorer: FoldScorer, est: Any, unit: float = 1.0) -> 
         return None
     share = fold_shares(fold, source[1], source[2], scorer.n_folds)[0]
     src = np.asarray(est.source_prior_, dtype=float)
-    return rows.map_reduce(_fold_moments_block, rows.shared(scorer), est.calibrator_, src, share,
-                           score_grid(float(src[1])), float(unit))
+    r = DEFAULT_RESOLUTION if resolution is None else float(resolution)
+    averaged = bool(getattr(est, "_fold_point", False))
+    sums, tally, harm = rows.map_reduce(_fold_moments_block, rows.shared(scorer),
+                                        est.calibrator_, src, share, score_grid(float(src[1])),
+                                        float(unit), r, averaged)
+    harm = None if not harm else (harm[0] / sums.total, harm[1] / sums.total,
+                                  float(harm[2][0]) / sums.total)
+    return sums.with_rows(*tally.to_scores(proba=True), harm=harm)

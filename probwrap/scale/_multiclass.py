@@ -41,7 +41,7 @@ from ._blocks import (
 )
 from ._dask import _frozen_multiclass
 from ._multiclass_wrappers import _Smallest
-from ._rows import in_weight_unit, rows_of
+from ._rows import _ScaledBlocks, in_weight_unit, rows_of
 from ._tally import ZERO_WEIGHT, kept_rows_limit, warn_weight_unit
 
 __all__ = ["fit_multiclass_source", "estimate_multiclass_target"]
@@ -68,6 +68,48 @@ def _target_block(estimator, calibrator, Xb, wb):
     if calibrator is not None:
         p = calibrator.predict(p)
     return p, w
+
+
+def _stacked_target_block(folds, calibrator, share, Xb, wb):
+    """A block of unlabelled rows as the in-memory estimate after a refit reads them
+    (``PriorEstimator._estimating_rows``): every row once per fold model, its calibrated
+    posterior from that model, weighted by the row's weight times the fold's share.
+    ``(posteriors (K n, k), the rows' own weights (n,), stacked weights (K n,))``; the
+    reductions over target blocks read the first and the last entry."""
+    fp = folds.fold_proba(Xb)
+    w = block_weights(wb, fp.shape[1])
+    if fp.shape[1] == 0:  # an empty block (partition): kept as None, left out of every sum
+        return None
+    if calibrator is not None:
+        fp = np.stack([calibrator.predict(f) for f in fp])
+    return (fp.reshape(-1, fp.shape[2]), w,
+            np.concatenate([s_k * w for s_k in np.asarray(share, dtype=float)]))
+
+
+def _fold_row_sums(block, src, share, unit, averaged):
+    """Sums over a block of :func:`_stacked_target_block` that need each row's fold models
+    together: the weighted sums of the shift-test scores averaged over the fold models (each
+    fold weighted by its share) and of their outer products (the shift test's and the
+    class-moment interval's unlabelled side, as in memory); with ``averaged`` (the wrapper
+    predicts with the fold models' average) also the sums behind the harm scale of that
+    average posterior (as :func:`_means`: the weighted sums of the posteriors and of their
+    entropy, and of the outer products of their scores). The rows' own weights (the middle
+    entry, not divided by the blocks' unit) are divided by ``unit``."""
+    p, w = block[0], block[1] / unit
+    n = w.shape[0]
+    k = src.shape[0]
+    fp = p.reshape(-1, n, k)
+    q = fp / src
+    u = np.tensordot(share, q[:, :, 1:] - q[:, :, :1], axes=1)
+    out = (w @ u, (u * w[:, None]).T @ u)
+    if not averaged:
+        return out
+    avg = np.tensordot(share, fp, axes=1)
+    qa = avg / src
+    ua = qa[:, 1:] - qa[:, :1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        entropy = float(w @ -np.where(avg > 0, avg * np.log(avg), 0.0).sum(axis=1))
+    return (*out, w @ avg, (ua * w[:, None]).T @ ua, np.array([entropy]))
 
 
 # -- small sets: the rows themselves ---------------------------------------------------------
@@ -406,7 +448,7 @@ def _em_step(block, src, prior, also=None):
     of the EM map's Jacobian; with ``also``, the weighted log-likelihood terms
     ``sum_i w_i log(q_i . x)`` at ``prior`` and ``also`` too (for the SQUAREM safeguard;
     probwrap.shift._em_loop)."""
-    p, w = block
+    p, w = block[0], block[-1]
     q = p / src
     num = q * prior
     den = num.sum(axis=1, keepdims=True)
@@ -419,7 +461,7 @@ def _em_step(block, src, prior, also=None):
 
 
 def _means(block, k):
-    p, w = block
+    p, w = block[0], block[-1]
     hard = w @ np.eye(k)[np.argmax(p, axis=1)]
     with np.errstate(divide="ignore", invalid="ignore"):
         entropy = float(w @ -np.where(p > 0, p * np.log(p), 0.0).sum(axis=1))
@@ -462,7 +504,7 @@ def _em_dask(parts, src, init, total, tol, max_iter, pseudo=None, scale=1.0):
 def _loglik_block(block, src, prior):
     """A block's weighted log-likelihood of the shares ``prior`` (Saerens et al. 2002), as
     ``probwrap.shift._estimate._loglik`` computes it in memory."""
-    p, w = block
+    p, w = block[0], block[-1]
     return np.array(w @ np.log(np.maximum((p / src) @ prior, _TINY)))
 
 
@@ -517,24 +559,6 @@ def _refit_folds(est: Any, folds: Any) -> tuple | None:
     return share, moments
 
 
-def _fold_score_sums(folds, calibrator, src, share, unit, Xb, wb):
-    """Weighted sums of the unlabelled rows' shift-test scores averaged over the fold models
-    (each fold model's calibrated posteriors, weighted by the fold's share of the labelled
-    rows), and of their outer products: the unlabelled side of the shift test and of the
-    class-moment interval with a refit base model, as in memory. The weights are divided by
-    ``unit`` (see ``in_weight_unit``)."""
-    fp = folds.fold_proba(Xb)
-    k = src.shape[0]
-    w = block_weights(wb, fp.shape[1]) / unit
-    u = np.zeros((fp.shape[1], k - 1))
-    for s_k, f in zip(share, fp, strict=True):
-        if calibrator is not None and f.shape[0]:
-            f = calibrator.predict(f)
-        q = f / src
-        u += s_k * (q[:, 1:] - q[:, :1])
-    return w @ u, (u * w[:, None]).T @ u
-
-
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None,
                                random_state: Any = None, folds: Any = None):
     """Prior estimate (a :class:`probwrap.shift.PriorEstimate`) of unlabelled multiclass Dask or
@@ -554,6 +578,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
     k = est.n_classes_
     rows = rows_of(X, None, sample_weight, estimator)
     parts = rows.persist(_target_block, estimator, est.calibrator_)
+    extra: list = []  # more persisted blocks, released with these
     try:
         # weights beyond about 1e+-77 divided by a power of two, as in memory
         parts, unit = in_weight_unit(parts, sample_weight is not None)
@@ -582,15 +607,38 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         n_iter, converged, distance = 0, True, 0.0
         n_eff = total**2 / squared
         su, suu = parts.reduce(_score_sums, None, src)
+        # the harm scale reads the posteriors that predict: the refit model's here
+        harm_sums = (soft_mean, suu, entropy)
         refit = _refit_folds(est, folds)
-        # the shift test's (and the class-moment interval's) unlabelled side: the scores
-        # averaged over the fold models for a refit base model (one more pass), as in memory
-        fsu, fsuu = (su, suu) if refit is None else rows.map_reduce(
-            _fold_score_sums, rows.shared(folds), est.calibrator_, src, refit[0], unit)
+        # the rows the estimate reads (e_*): the model's posteriors, or for a refit base model
+        # every row once per fold model, weighted by the fold's share, as in memory
+        # (PriorEstimator._estimating_rows; since 4 December 2026, before the refit model's)
+        e_parts, e_total, e_soft, e_hard, e_su, e_suu = (parts, total, soft_mean, hard_mean,
+                                                         su, suu)
+        if refit is None:
+            fsu, fsuu = su, suu
+        else:
+            # one more pass: the fold models score every block where it lives (sent once),
+            # and the stacked posteriors stay there for EM's passes
+            stacked = rows.persist(_stacked_target_block, rows.shared(folds), est.calibrator_,
+                                   refit[0])
+            extra.append(stacked)
+            e_parts = stacked if unit == 1.0 else _ScaledBlocks(stacked, unit)
+            e_soft, e_hard, (e_total, _, _, _) = e_parts.reduce(_means, k)
+            e_su, e_suu = e_parts.reduce(_score_sums, None, src)
+            averaged = bool(getattr(est, "_fold_point", False))
+            # the shift test's (and the class-moment interval's) unlabelled side: the scores
+            # averaged over the fold models, as in memory
+            row_sums = e_parts.reduce(_fold_row_sums, src, refit[0], unit, averaged)
+            fsu, fsuu = row_sums[0], row_sums[1]
+            if averaged:
+                # the wrapper predicts with the fold models' average posterior
+                # (PriorShiftWrapper.predicted_with_): the harm scale reads it, as in memory
+                harm_sums = (row_sums[2], row_sums[3], float(np.asarray(row_sums[4])[0]))
         if method == "em":
             prior, n_iter, converged, distance = _em_dask(
-                parts, src, src.copy(), total, float(est.tol), int(est.max_iter),
-                pseudo=float(est.prior_strength) * src, scale=n_eff / total,
+                e_parts, src, src.copy(), e_total, float(est.tol), int(est.max_iter),
+                pseudo=float(est.prior_strength) * src, scale=n_eff / e_total,
             )
             if not converged:
                 warnings.warn(
@@ -604,7 +652,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             # the estimators need only the target's mean (hard or soft) prediction: pass it as
             # a single row with soft=True, which uses that row as the mean
             soft = method in ("bbse_soft", "pacc")
-            mu = (soft_mean if soft else hard_mean) / total
+            mu = (e_soft if soft else e_hard) / e_total
             conf = est.soft_confusion_ if soft else est.confusion_
             if method.startswith("bbse"):
                 point = bbse_prior(mu[None, :], conf, src, soft=True)
@@ -633,14 +681,14 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             pseudo = float(est.prior_strength)
 
             def fade(pt):
-                return _fade_dask(est, parts, pt, total, n_eff, suu, stat, pvalue)
+                return _fade_dask(est, e_parts, pt, e_total, n_eff, e_suu, stat, pvalue)
 
         if (method == "em" and int(est.n_resamples) > 0
                 and getattr(est, "_labelled_cov", None) is not None):
             t_mean = fsu / total
             target = (t_mean, fsuu / total - np.outer(t_mean, t_mean), n_eff)
             ml, interval, ml_interval = _analytic_interval(
-                est, estimator, rows, parts, prior, total, n_eff, unit, target,
+                est, estimator, rows, e_parts, prior, e_total, n_eff, unit, target,
                 moments=None if refit is None else refit[1])
             if not est._within(prior, ml_interval):
                 # as in memory: the data reject the shrunk estimate at the interval's level, so
@@ -653,38 +701,42 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             # gate's amplification below reads it); without an interval the likelihood-ratio
             # region decides the fade (one more pass, more only where the data reject the
             # shrunk estimate)
-            ml = _ml_prior(est, parts, prior, total)
+            ml = _ml_prior(est, e_parts, prior, e_total)
             from ..shift._estimate import unlabelled_share
 
-            scale = n_eff / total
-            share = unlabelled_share(stat, su / total, suu / total, n_eff)
+            scale = n_eff / e_total
+            share = unlabelled_share(stat, e_su / e_total, e_suu / e_total, n_eff)
             point, pseudo = est._settle_by_likelihood(
-                point, ml, lambda x: scale * float(parts.reduce(_loglik_block, src, x)), fade,
-                pvalue, share)
+                point, ml, lambda x: scale * float(e_parts.reduce(_loglik_block, src, x)),
+                fade, pvalue, share)
         prior, n_iter, converged, distance = (point.prior, point.n_iter, point.converged,
                                               point.distance)
         if ml is not None:
             # the in-memory warning of a maximum-likelihood share at the edge, from the same
             # sums (the rows' information is the weighted mean of u u'; the log-likelihood
             # one more pass, only without an interval and only where a share is at the edge)
-            scale = n_eff / total
+            scale = n_eff / e_total
             est._warn_boundary(
                 ml, None, None, n_eff, pvalue=pvalue, ml_bounds=ml_interval, prior=prior,
-                pseudo=pseudo, info=suu / total,
-                loglik=lambda x: scale * float(parts.reduce(_loglik_block, src, x)))
+                pseudo=pseudo, info=e_suu / e_total,
+                loglik=lambda x: scale * float(e_parts.reduce(_loglik_block, src, x)))
     finally:
         parts.release()
+        for more in extra:
+            more.release()
     # the same harm scale as in memory (for the max_harm cutoff): from the same sums
-    loss = entropy / total
+    h_mean, h_suu, h_entropy = harm_sums
+    loss = h_entropy / total
     reference = getattr(est, "_source_log_loss", None)  # the labelled rows' log loss
     if reference is not None and np.isfinite(reference) and reference > 0:
         loss = min(loss, float(reference))
-    harm_scale = _null_harm_scale_moments(soft_mean / total, suu / total, loss, src,
+    harm_scale = _null_harm_scale_moments(h_mean / total, h_suu / total, loss, src,
                                           test.mean_cov)
     if ml is not None and harm_scale:
         # as in memory: the applied move is a share of EM's estimate, which can lie far beyond
-        # the one-step estimate the harm bound assumes (J = the weighted mean of u u')
-        harm_scale *= estimate_amplification((ml - src)[1:], suu / total, test.mean_cov,
+        # the one-step estimate the harm bound assumes (J = the weighted mean of u u' over the
+        # rows the estimate reads)
+        harm_scale *= estimate_amplification((ml - src)[1:], e_suu / e_total, test.mean_cov,
                                              test.raw)
     if interval is not None:
         # as in memory: an interval that excludes the source shares while the test does not

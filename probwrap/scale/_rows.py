@@ -235,5 +235,5 @@ def unlabelled_proba_from_rows(
         from ._folds import fold_moments
 
         moments = fold_moments(rows_of(X, None, sample_weight, estimator), folds, moments_of,
-                               tally.weight_unit)
+                               tally.weight_unit, resolution)
     return proba, w, tally, moments

@@ -49,6 +49,7 @@ from ._resample import (  # noqa: F401  (_interval_from_draws: imported from her
 )
 from ._shift_tests import (
     _mean_cov,
+    _null_harm_scale_moments,
     _score_rows,
     _score_stat_moments,
     _source_moments,
@@ -696,6 +697,13 @@ class PriorEstimator(_Resampling):
         pe, we = p, wk
         if refit is not None:
             pe, we = self._estimating_rows(refit[0], share, w, n_units)
+        elif moments is not None and moments.rows is not None:
+            # rows that are not at hand (more than 20,000 Dask or Spark rows): the same rows as
+            # bins of a tally of every row's log-odds once per fold model, weighted by the
+            # fold's share, taken where the rows live (probwrap.scale._folds.fold_moments)
+            raw, stacked = moments.rows
+            pe = self.calibrate(self._checked_proba(raw))
+            we = stacked * (n_units / stacked.sum())
         point = self._point(pe, we, src, self.confusion_, self.soft_confusion_, n_source=n_src)
         ml = None
         if self.method == "em":
@@ -721,8 +729,17 @@ class PriorEstimator(_Resampling):
                                     pooled=cell_t is None and cell_s is None, source_prior=src)
         stat, pvalue = test.statistic, test.pvalue
         pseudo = float(getattr(self, "prior_strength", 0.0)) if self.method == "em" else None
-        harm_scale = null_harm_scale(p, w, src, test.mean_cov,
-                                     reference_loss=getattr(self, "_source_log_loss", None))
+        if moments is not None and moments.harm is not None:
+            # rows not at hand whose fold models' average posterior predicts: its sums, taken
+            # where the rows live (null_harm_scale of that average, as in memory)
+            mean_p, second, loss = moments.harm
+            reference = getattr(self, "_source_log_loss", None)
+            if reference is not None and np.isfinite(reference) and reference > 0:
+                loss = min(loss, float(reference))
+            harm_scale = _null_harm_scale_moments(mean_p, second, loss, src, test.mean_cov)
+        else:
+            harm_scale = null_harm_scale(p, w, src, test.mean_cov,
+                                         reference_loss=getattr(self, "_source_log_loss", None))
         if ml is not None and harm_scale:
             # the move that will be applied is a share of EM's estimate, which can lie far
             # beyond the one-step estimate the harm bound assumes (estimate_amplification)

@@ -73,15 +73,39 @@ class FoldScoreMoments:
         self.s2 = np.asarray(s2, dtype=float)
         self.n_folds = int(n_folds)
         self._splines = None
+        #: ``(proba (m, 2), weights (m,))``: the rows' posteriors from every fold model, each
+        #: row once per fold model weighted by its weight times the fold's share (as bins of a
+        #: tally), for the point estimate (:meth:`with_rows`); None if not taken
+        self.rows: tuple | None = None
+        #: ``(mean posterior (2,), mean of u u' (1, 1), mean entropy)`` of the fold models'
+        #: average posterior (the wrapper predicts with it), for the harm scale; or None
+        self.harm: tuple | None = None
 
     def __add__(self, other: FoldScoreMoments) -> FoldScoreMoments:
         return FoldScoreMoments(self.grid, self.total + other.total, self.s1 + other.s1,
                                 self.s2 + other.s2, self.n_folds)
 
+    def with_rows(self, proba: Any, weights: Any, harm: tuple | None = None
+                  ) -> FoldScoreMoments:
+        """These sums with the rows the point estimate reads after a refit (``rows``): the
+        fold models' raw posteriors ``proba`` (m, 2) of the unlabelled rows, each row once
+        per fold model, with ``weights`` (m,) the row's weight times the fold's share (only
+        their ratios matter), e.g. the bins of a tally of those rows; the estimate reads them
+        as ``PriorEstimator.estimate`` reads every row once per fold model in memory.
+        ``harm``: the weighted means of the fold models' average posterior, of the outer
+        products of its scores at the source prior and of its entropy, when that average
+        predicts (the harm scale reads them; see :attr:`harm`)."""
+        out = FoldScoreMoments(self.grid, self.total, self.s1, self.s2, self.n_folds)
+        out.rows = (np.asarray(proba, dtype=float), np.asarray(weights, dtype=float))
+        out.harm = harm
+        return out
+
     def scaled(self, unit: float) -> FoldScoreMoments:
         """The same sums with the weights divided by ``unit`` (means do not change)."""
-        return FoldScoreMoments(self.grid, self.total / unit, self.s1 / unit, self.s2 / unit,
-                                self.n_folds)
+        out = FoldScoreMoments(self.grid, self.total / unit, self.s1 / unit, self.s2 / unit,
+                               self.n_folds)
+        out.rows, out.harm = self.rows, self.harm
+        return out
 
     def _interpolators(self) -> tuple:
         if self._splines is None:
