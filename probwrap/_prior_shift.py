@@ -267,8 +267,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         posteriors the calibration was fitted on, not the refit model's (since 4 December
         2026; on R's ggplot2 diamonds with gradient boosting at 2,000 labelled rows the mean
         estimate moved from 0.180 to 0.200 for a true 0.2). More than 20,000 Dask or Spark
-        ``adapt`` rows still read the refit model (docs/prior_shift.md, "The point estimate
-        after a refit").
+        ``adapt`` rows read them too, where the rows live (docs/scale.md, "A base model refit
+        in memory, then Dask or Spark rows"), except under a bootstrap interval on two
+        classes, which reads the refit model's tally and warns.
     target_prior_interval_ : ndarray of shape (n_classes, 2) or None
         Interval of the class priors of the ``adapt`` rows, carrying the error of both the
         unlabelled and the labelled rows (set by ``adapt``; see ``interval``). With more than

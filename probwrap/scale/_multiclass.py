@@ -10,6 +10,10 @@ computed per block and added on the client (the driver):
   gradient and Hessian (sizes k and k x k) — one pass over the blocks per evaluation;
 - the source prior and the hard / soft confusion matrices: one pass;
 - EM: each iteration is one pass computing ``sum_i w_i normalise(p_i * prior / source)``;
+  after a base model refit on the labelled rows (in memory) over every row once per fold
+  model, the fold models' calibrated posteriors kept where the rows live and each weighted by
+  the row's weight times the fold's share, the rows the in-memory estimate reads
+  (``PriorEstimator._estimating_rows``);
 - BBSE / ACC: the target's mean (hard or soft) predicted-class distribution, one pass;
 - the two-sample score test of "no shift": the mean and covariance of the per-row scores, one
   pass over the labelled and one over the unlabelled blocks;

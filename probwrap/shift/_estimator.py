@@ -625,7 +625,8 @@ class PriorEstimator(_Resampling):
             whole cells.
             Two classes: a :class:`probwrap.shift._fold_moments.FoldScoreMoments` (the sums of
             the fold-averaged score of rows that are not at hand, more than 20,000 Dask or
-            Spark rows) serves the shift test and the score interval the same way.
+            Spark rows) serves the shift test and the score interval the same way, and its
+            ``rows`` (every row once per fold model, as bins of a tally) the point estimate.
 
         Returns
         -------
