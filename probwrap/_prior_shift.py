@@ -812,7 +812,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         cells : array-like of shape (n,), default=None
             The cell of every row (rows of one aggregated group share one): the shift test and
             the interval then count each cell as one unit, as ``fit(cells=...)`` does for the
-            labelled rows (docs/prior_shift.md, "Counts (k of n)"). Rows in memory only.
+            labelled rows (docs/prior_shift.md, "Counts (k of n)"). Rows in memory, or at
+            most 20,000 Dask rows (a Dask or NumPy array in the rows' order), whose rows come
+            to the client and are estimated as in memory (since 4 December 2026); refused with
+            a Spark DataFrame, beyond 20,000 Dask rows, and after a fit on more than 20,000
+            Dask or Spark rows (docs/scale.md, "Limits of the Dask path").
 
         Returns
         -------
@@ -837,12 +841,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         source = getattr(self, "_source_tally", None)
         target = None
         multiclass = self.classes_.shape[0] > 2
-        if cells is not None and (_is_dask(X) or _is_dask(sample_weight) or source is not None):
-            raise ValueError(
-                "`cells` is supported for rows in memory fitted in memory only; these rows (or "
-                "the labelled rows fitted) are Dask or Spark data reduced to a tally, which "
-                "keeps no cells. Collect the rows, or leave `cells` out."
-            )
+        if cells is not None:
+            cells = self._dask_cells(X, sample_weight, cells, source)
         if multiclass and (_is_dask(X) or _is_dask(sample_weight)):
             # Multiclass Dask rows: EM / BBSE as reductions over the calibrated posteriors on
             # the workers (one pass per EM iteration); with the analytic interval (EM).
@@ -850,7 +850,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
             scorer = self._fold_scorer()
             res = estimate_multiclass_target(est, self.estimator_, X, sample_weight, rs,
-                                             folds=scorer)
+                                             folds=scorer, cells=cells)
             # (the fold models scored the rows where they live whenever there are any, and
             # every interval computed here reads them: a small set's in-memory estimate with
             # fold_proba, any interval; more rows, EM's class-moment interval; no warning)
@@ -871,6 +871,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 # and as a tally of every row once per fold model for the estimate (unless a
                 # bootstrap interval draws from the refit model's tally: then all read it)
                 moments_of=est if self.interval == "score" or est.n_resamples == 0 else None,
+                cells=cells is not None,
             )
         else:
             proba = self._inner_output(X, "predict_proba")
@@ -895,6 +896,33 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                                fold_proba=folds, cells=cells)
             interval = res.interval
         return self._finish_adapt(res, interval)
+
+    @staticmethod
+    def _dask_cells(X: Any, sample_weight: Any, cells: Any, source: Any) -> Any:
+        """``adapt``'s ``cells`` as an array in the rows' order, or a clear refusal where they
+        cannot be honoured: labelled rows kept as a tally (a Dask or Spark fit beyond 20,000
+        rows), or a Spark DataFrame (its rows have no order an array could follow). Dask rows
+        take them (a Dask array is computed): a set of at most 20,000 rows comes to the client
+        and the in-memory estimate reads the cells; more rows are refused by the scale layer
+        after its first pass (tallies and sums keep no cells)."""
+        if source is not None:
+            raise ValueError(
+                "`cells` cannot be honoured here: the labelled rows were fitted from more than "
+                "20,000 Dask or Spark rows and are kept as a tally of their scores, which keeps "
+                "no rows to pair with cells. Fit in memory (or on at most 20,000 Dask rows), or "
+                "leave `cells` out."
+            )
+        if not (_is_dask(X) or _is_dask(sample_weight)):
+            return cells
+        if _is_dask(X) and not hasattr(X, "__dask_graph__"):
+            raise ValueError(
+                "`cells` is not taken with a Spark DataFrame: its rows have no order an array "
+                "of cells could follow. Collect the rows (frame.toPandas()) and pass them in "
+                "memory, or leave `cells` out."
+            )
+        if hasattr(cells, "__dask_graph__"):
+            cells = cells.compute()
+        return np.asarray(cells)
 
     def _warn_refit_left_out(self, folds: Any) -> None:
         """Warn when the base model was refit here and its labelled rows are kept, but the

@@ -184,3 +184,13 @@ def test_add_predictions_probability_is_what_predict_proba_gives_with_fold_model
     np.testing.assert_allclose(got["probability"], before, rtol=1e-12)
     np.testing.assert_allclose(got["adjusted_probability"], wrapper.predict_proba(X_new)[:, 1],
                                rtol=1e-12)
+
+
+def test_cells_with_a_spark_frame_are_refused_saying_why(spark, cancer):
+    # Dask sets of at most 20,000 rows take adapt(cells=...) (tests/test_distributed_cells.py);
+    # a Spark frame's rows have no order an array of cells could follow, and adapt says so
+    # before any pass over the rows
+    _, _, X_new, model = cancer
+    frame = spark.createDataFrame(X_new).coalesce(1)
+    with pytest.raises(ValueError, match="Spark DataFrame: its rows have no order"):
+        copy.deepcopy(model).adapt(frame, cells=np.arange(X_new.shape[0]) // 10)

@@ -94,9 +94,9 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None,
-                               random_state: Any = None, folds: Any = None):
+                               random_state: Any = None, folds: Any = None, cells: Any = None):
     return _multiclass.estimate_multiclass_target(est, estimator, X, sample_weight, random_state,
-                                                  folds=folds)
+                                                  folds=folds, cells=cells)
 
 
 def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, template: Any):

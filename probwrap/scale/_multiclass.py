@@ -564,7 +564,7 @@ def _refit_folds(est: Any, folds: Any) -> tuple | None:
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None,
-                               random_state: Any = None, folds: Any = None):
+                               random_state: Any = None, folds: Any = None, cells: Any = None):
     """Prior estimate (a :class:`probwrap.shift.PriorEstimate`) of unlabelled multiclass Dask or
     Spark rows.
 
@@ -576,6 +576,9 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
     labelled rows): the fold models score the rows where they live too, and the shift test and
     the class-moment interval read their averaged scores as in memory (a small set: the
     in-memory estimate with ``fold_proba``; beyond: one more pass for the sums of those scores).
+
+    ``cells`` (one cell label per row, in the rows' order): read by the in-memory estimate of a
+    small set; more rows are refused (:func:`probwrap.scale._rows.refuse_cells`).
     """
     from ..shift import PriorEstimate, acc_prior, bbse_prior
 
@@ -605,7 +608,11 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
                 if unit != 1.0:
                     w = w / unit
             return est.estimate(p, None if sample_weight is None else w,
-                                random_state=random_state, fold_proba=fold_proba)
+                                random_state=random_state, fold_proba=fold_proba, cells=cells)
+        if cells is not None:
+            from ._rows import refuse_cells
+
+            refuse_cells(int(n_rows))
         src = est.source_prior_
         method = est.method
         n_iter, converged, distance = 0, True, 0.0

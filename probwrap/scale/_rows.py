@@ -90,6 +90,22 @@ def in_weight_unit(parts: Any, weighted: bool) -> tuple[Any, float]:
     return (parts if unit == 1.0 else _ScaledBlocks(parts, unit)), unit
 
 
+def refuse_cells(n_rows: int) -> None:
+    """The refusal of ``adapt(cells=...)`` on more than ``KEPT_ROWS`` Dask rows: they are read
+    as tallies and sums where they live, and the cells' clustered variance of the mean score
+    (at every candidate prior, for the score interval) would need each cell's own sums back,
+    as many as there are cells."""
+    from ._tally import kept_rows_limit
+
+    raise ValueError(
+        f"`cells` is taken with at most {kept_rows_limit():,} Dask rows, whose rows come to the "
+        f"client so that adapt runs as in memory; these {n_rows:,} rows are reduced to tallies "
+        "and sums where they live, which keep no cells (the cells' clustered variance of the "
+        "mean score, at every candidate prior, would need each cell's own sums). Collect the "
+        "rows, or leave `cells` out (docs/scale.md, 'Limits of the Dask path')."
+    )
+
+
 def _is_spark(X: Any) -> bool:
     from ._spark import is_spark_frame
 
@@ -179,6 +195,7 @@ def unlabelled_proba_from_rows(
     owner: str = "PriorShiftWrapper.adapt",
     folds: Any = None,
     moments_of: Any = None,
+    cells: bool = False,
 ):
     """Binary posteriors of unlabelled Dask or Spark rows as tally rows:
     ``(proba (m, 2), weights, tally, fold posteriors)``.
@@ -197,6 +214,9 @@ def unlabelled_proba_from_rows(
     :class:`~probwrap.shift.PriorEstimator`, for its score interval): one more pass sums the
     fold-averaged score on a grid of priors where the rows live
     (:class:`probwrap.shift._fold_moments.FoldScoreMoments`, the last entry then).
+
+    ``cells`` (the caller has cells for the rows, ``adapt(cells=...)``): a set beyond
+    ``KEPT_ROWS`` rows is refused after the tally (:func:`refuse_cells`).
     """
     tally_of_model, engine = _tally_step(X)
     _check_binary(estimator, engine)
@@ -226,6 +246,8 @@ def unlabelled_proba_from_rows(
         proba, fold_proba, w = scored_rows(rows_of(X, None, sample_weight, estimator), folds,
                                            tally.weight_unit)
         return proba, (w if weighted else None), None, fold_proba
+    if cells:
+        refuse_cells(tally.n_rows)
     from ._dask import _warn_binned_rows
 
     _warn_binned_rows(owner, tally, stacklevel=5)
