@@ -85,9 +85,15 @@ def test_semicolon_file_keeps_its_decimal_commas(map_file, tmp_path, capsys):
         _expected(map_file, [0.25, 0.75]))
 
 
-def test_missing_score_is_still_refused(map_file, tmp_path, capsys):
+def test_missing_score_is_kept_or_refused(map_file, tmp_path, capsys):
+    # kept by default (tests/test_cli_apply_missing.py); refused with --missing refuse
     (tmp_path / "gap.csv").write_text("id,risk\n1,0.2\n2,NA\n")
     code, err = _apply(map_file, tmp_path / "gap.csv", tmp_path / "out.csv", capsys)
+    assert code == 0 and "row 3 (counting the header as row 1)" in err
+    code = main(["calibrate", "apply", "--map", str(map_file), "--scores",
+                 str(tmp_path / "gap.csv"), "--score-column", "risk", "--out",
+                 str(tmp_path / "out2.csv"), "--missing", "refuse"])
+    err = capsys.readouterr()[1]
     assert code == 1
     assert "column 'risk', row 3" in err and "missing" in err
 

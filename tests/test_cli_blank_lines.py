@@ -57,7 +57,8 @@ def test_interior_blank_line_is_a_missing_value_named_by_its_row(scores, tmp_pat
     assert code == 0, err
     path = _one_column(tmp_path / "new.csv", s[:6], blank_after=2)
     for argv in (("calibrate", "apply", "--map", tmp_path / "map.json", "--scores", path,
-                  "--score-column", "risk", "--out", tmp_path / "out.csv"),
+                  "--score-column", "risk", "--out", tmp_path / "out.csv",
+                  "--missing", "refuse"),
                  ("prevalence", "--unlabelled", path, "--score-column", "risk",
                   "--source-prevalence", 0.6, "--resamples", 20)):
         code, _, err = run(capsys, *argv)

@@ -161,26 +161,31 @@ def test_percent_sign_and_thousands_separators_are_explained(scored, capsys):
     assert "decimal comma is read only in a semicolon-separated file" in err
 
 
-def test_standard_input_and_output_are_refused_by_name(scored, capsys, tmp_path):
-    """'-' is not read as a file called '-' ("file not found") nor refused as a file with no
-    extension: the message says that standard input/output is not supported."""
+def test_standard_input_is_read_as_the_file(scored, capsys, monkeypatch, tmp_path):
+    """'-' is standard input (before 4 December 2026 it was refused by name): the weighted
+    cutoff read from it is the file's, gzip told by its first bytes; a map on standard input
+    too (tests/test_cli_standard_streams.py has the rest)."""
+    import io
+    import sys
+
     root, _ = scored
-    code, _, err = _cutoff(capsys, "-")
-    assert code == 1
-    assert "-: reading a table from standard input is not supported" in err
+    code, from_file, err = _cutoff(capsys, root / "plain.csv")
+    assert code == 0, err
+    data = gzip.compress((root / "plain.csv").read_bytes())
+    monkeypatch.setattr(sys, "stdin", io.TextIOWrapper(io.BytesIO(data)))
+    code, from_stream, err = _cutoff(capsys, "-")
+    assert code == 0, err
+    assert json.loads(from_stream) == json.loads(from_file)
     code, _, err = run(capsys, "calibrate", "fit", "--scores", root / "plain.csv",
                        "--score-column", "score", "--label-column", "label", "--method", "platt",
                        "--out", tmp_path / "map.json")
     assert code == 0, err
+    monkeypatch.setattr(sys, "stdin", io.TextIOWrapper(io.BytesIO(
+        (tmp_path / "map.json").read_bytes())))
     code, _, err = run(capsys, "calibrate", "apply", "--map", "-", "--scores",
                        root / "plain.csv", "--score-column", "score", "--out", tmp_path / "o.csv")
-    assert code == 1
-    assert "-: reading a map from standard input is not supported" in err
-    with pytest.raises(SystemExit) as info:
-        main(["calibrate", "apply", "--map", str(tmp_path / "map.json"), "--scores",
-              str(root / "plain.csv"), "--score-column", "score", "--out", "-"])
-    assert info.value.code == 2
-    assert "--out -: writing to standard output is not supported" in capsys.readouterr().err
+    assert code == 0, err
+    assert (tmp_path / "o.csv").exists()
 
 
 def test_labels_differing_only_in_spaces_are_named(scored, capsys):

@@ -18,7 +18,14 @@ import re
 import signal
 import sys
 
-from ._common import OPTIONAL_MODULES, DataError, clean, missing_extra_message
+from ._common import (
+    INPUT_OPTIONS,
+    OPTIONAL_MODULES,
+    DataError,
+    StandardStream,
+    clean,
+    missing_extra_message,
+)
 
 __all__ = ["main", "DataError"]
 
@@ -115,10 +122,24 @@ def join_negative_values(argv: list[str]) -> list[str]:
     return out
 
 
+def _standard_input(args: argparse.Namespace, parser: argparse.ArgumentParser) -> None:
+    """Swap every input file given as ``-`` for a :class:`StandardStream` (read from standard
+    input, named "standard input" in messages); two of them is a usage error, since standard
+    input can be read only once."""
+    given = [dest for dest in INPUT_OPTIONS if getattr(args, dest, None) == "-"]
+    if len(given) > 1:
+        named = " and ".join(INPUT_OPTIONS[d] for d in given)
+        parser.error(f"{named} are both '-': standard input can be read only once; give all "
+                     "but one of them as a file")
+    for dest in given:
+        setattr(args, dest, StandardStream())
+
+
 def _run(argv: list[str] | None) -> int:
     parser = build_parser()
     argv = join_negative_values([str(a) for a in (sys.argv[1:] if argv is None else argv)])
     args = parser.parse_args(argv)
+    _standard_input(args, parser)
     previous = None
     try:
         previous = signal.signal(signal.SIGTERM, _on_sigterm)

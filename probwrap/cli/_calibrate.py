@@ -22,18 +22,20 @@ import numpy as np
 from .._validation import plain
 from ._common import (
     DataError,
+    StandardStream,
     add_positive_label_flag,
     add_seed_flag,
     add_weight_flag,
     check_ranking,
     check_row_count,
     clean,
+    is_standard_stream,
     require,
     shown,
     warn_line,
     whole_number,
 )
-from ._files import check_out_suffix, check_writable, write_table, write_text
+from ._files import check_out_suffix, check_writable, to_stdout, write_table, write_text
 from ._progress import Stages, progress
 from ._promise_flags import (
     add_late_label_flags,
@@ -70,8 +72,10 @@ def add_scale_flag(parser: argparse.ArgumentParser, *, default: str | None = "pr
 
 
 def read_scores(frame: Any, column: str, path: str | Path, *, scale: str,
-                flag: str = "--score-column", verb: str | None = None) -> np.ndarray:
-    """The score column as finite floats; probabilities must lie in [0, 1].
+                flag: str = "--score-column", verb: str | None = None,
+                allow_missing: bool = False) -> np.ndarray:
+    """The score column as finite floats; probabilities must lie in [0, 1]. ``allow_missing``:
+    missing scores are NaN (``calibrate apply --missing keep``), not an error.
 
     Log-odds that all lie in [0, 1] (at least 10 rows, not all equal) are most likely
     probabilities passed with ``--scale log-odds``: read as log-odds they are probabilities
@@ -79,14 +83,16 @@ def read_scores(frame: Any, column: str, path: str | Path, *, scale: str,
     there, so it is not an error).
     """
     if scale == "proba":
-        return probability_column(frame, column, path, flag=flag)
-    values = numeric_column(frame, column, path, flag=flag, infinite_hint=(
+        return probability_column(frame, column, path, flag=flag, allow_missing=allow_missing)
+    values = numeric_column(frame, column, path, flag=flag, allow_missing=allow_missing,
+                            infinite_hint=(
         "; an infinite log-odds comes from a probability of exactly 0 or 1 (a forest's vote "
         "share, a rounded score): give the probabilities with --scale proba instead, which "
         "reads 0 and 1"))
-    if (verb is not None and values.shape[0] >= 10 and values.min() >= 0.0
-            and values.max() <= 1.0 and values.max() > values.min()):
-        lo, hi = float(values.min()), float(values.max())
+    given = values[~np.isnan(values)]
+    if (verb is not None and given.shape[0] >= 10 and given.min() >= 0.0
+            and given.max() <= 1.0 and given.max() > given.min()):
+        lo, hi = float(given.min()), float(given.max())
         warn_line(verb, (
             f"{path}: every value of column {plain(column)!r} lies in [0, 1] ({lo:.3g} to "
             f"{hi:.3g}), as probabilities do, but the scale is log-odds, which reads them as "
@@ -246,42 +252,48 @@ def _fit(args: argparse.Namespace) -> int:
         description = map_to_dict(wrapper.calibrator_, **metadata)
         stages.start("writing")
         write_text(args.out, json.dumps(description, indent=2, allow_nan=False) + "\n")
+    # with the map on standard output, the summary goes to stderr (stdout holds the map only)
+    echo = sys.stderr if to_stdout(args.out) else sys.stdout
+    where = "standard output" if to_stdout(args.out) else args.out
     print(
         f"fitted {'an' if wrapper.method_[0] in 'aeiou' else 'a'} {wrapper.method_} map on {scores.shape[0]} rows ({counts[1]} with label "
-        f"{shown(labels[1])}) and saved it to {args.out}"
+        f"{shown(labels[1])}) and saved it to {where}", file=echo,
     )
     if late is not None:
-        print("  " + late_label_line(late))
+        print("  " + late_label_line(late), file=echo)
     if args.method == "auto":
-        _print_candidates(wrapper)
+        _print_candidates(wrapper, echo)
     return 0
 
 
-def _print_candidates(wrapper: Any) -> None:
+def _print_candidates(wrapper: Any, echo: Any = None) -> None:
     """Every candidate of ``--method auto``: its cross-validated log loss, or why it has none
     (left out after a fold, not eligible, failed), and whether a sample of the rows scored
     them."""
+    import functools
+
+    print_ = functools.partial(print, file=echo or sys.stdout)
     notes = {name: clean(" ".join(str(note).split()))
              for name, note in wrapper.method_notes_.items()}
     if wrapper.method_scores_:
         # the standard error is that of each candidate's difference from the best one (so the
         # best one has none): printing it as "+-" read as the uncertainty of the loss itself
-        print("  candidate   cross-validated log loss   (standard error of the difference "
-              "from the lowest)")
+        print_("  candidate   cross-validated log loss   (standard error of the difference "
+               "from the lowest)")
         for name, (loss, se) in sorted(wrapper.method_scores_.items(), key=lambda kv: kv[1][0]):
             mark = "  <- chosen" if name == wrapper.method_ else ""
             gap = "lowest" if se == 0.0 else f"{se:.5f}"
-            print(f"  {name:<11} {loss:.5f}   ({gap}){mark}")
+            print_(f"  {name:<11} {loss:.5f}   ({gap}){mark}")
     for name, note in notes.items():
         if name == "auto":
             continue
         if name in wrapper.method_scores_:  # scored, then set aside (e.g. a boundary)
-            print(f"  {name:<11} {note}")
+            print_(f"  {name:<11} {note}")
         else:
             mark = "  <- chosen" if name == wrapper.method_ else ""
-            print(f"  {name:<11} no loss: {note}{mark}")
+            print_(f"  {name:<11} no loss: {note}{mark}")
     if "auto" in notes:
-        print(f"  note: {notes['auto']}")
+        print_(f"  note: {notes['auto']}")
 
 
 def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str, Any], str]:
@@ -294,17 +306,26 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
     from probwrap.calibration import map_from_dict, map_score_scale
     from probwrap.calibration._serialize import MAP_FORMAT
 
-    if str(path) == "-":
-        raise DataError("-: reading a map from standard input is not supported; give the path "
-                        "of the map file")
-    path = Path(path)
-    if not path.exists():
-        raise DataError(f"{path}: file not found")
-    if path.is_dir():
-        raise DataError(f"{path}: is a folder, not a map file")
+    if is_standard_stream(path):
+        path = path if isinstance(path, StandardStream) else StandardStream()
+        source = getattr(sys.stdin, "buffer", None)
+        if source is None:
+            raise DataError(f"{path}: there is no standard input to read")
+
+        def read_text() -> str:
+            return source.read().decode("utf-8-sig")
+    else:
+        path = Path(path)
+        if not path.exists():
+            raise DataError(f"{path}: file not found")
+        if path.is_dir():
+            raise DataError(f"{path}: is a folder, not a map file")
+
+        def read_text() -> str:
+            return path.read_text(encoding="utf-8-sig")
     try:
         # a byte-order mark (editors on Windows add one) is skipped, as in CSV files
-        description = json.loads(path.read_text(encoding="utf-8-sig"))
+        description = json.loads(read_text())
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise DataError(f"{path}: not a JSON file ({exc})") from None
     except RecursionError:
@@ -343,43 +364,81 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
     return cal_map, dict(description), used
 
 
+#: rows with a missing score named in the warning of ``calibrate apply --missing keep``
+_NAMED_MISSING = 5
+
+
+def _missing_rows_text(path: Any, rows: np.ndarray) -> str:
+    """The first :data:`_NAMED_MISSING` of ``rows`` (0-based data rows) as a message names them:
+    "rows 3, 7 and 9 (counting the header as row 1)"."""
+    from ._common import row_number
+
+    shown_rows = [row_number(path, int(r)).split(" ", 2)[1] for r in rows[:_NAMED_MISSING]]
+    counting = row_number(path, 0).split(" ", 2)[2]
+    if rows.shape[0] > _NAMED_MISSING:
+        listed = ", ".join(shown_rows) + ", ..."
+    elif len(shown_rows) > 1:
+        listed = ", ".join(shown_rows[:-1]) + " and " + shown_rows[-1]
+    else:
+        listed = shown_rows[0]
+    return f"{'row' if rows.shape[0] == 1 else 'rows'} {listed} {counting}"
+
+
 def _apply(args: argparse.Namespace) -> int:
     from pandas.api.types import is_numeric_dtype
 
+    keep_missing = args.missing == "keep"
     with Stages("calibrate", ["reading", "calibrating", "writing"]) as stages:
         stages.start("reading")
         cal_map, description, scale = load_map(args.map, args.scale)
         # every column is written out as it was read: CSV columns as their text
         frame = read_table(args.scores, exact=[args.score_column], as_text=True)
         scores = read_scores(frame, args.score_column, args.scores, scale=scale,
-                             verb="calibrate")
+                             verb="calibrate", allow_missing=keep_missing)
         if args.output_column in frame.columns:
             raise DataError(
                 f"{args.scores}: already has a column {shown(args.output_column)}; choose another "
                 "name with --output-column"
             )
+        missing = np.flatnonzero(np.isnan(scores))
+        if missing.shape[0] == scores.shape[0]:
+            raise DataError(
+                f"{args.scores}: column {shown(args.score_column)} holds no score (every row is "
+                "missing); check --score-column"
+            )
+        if missing.shape[0]:
+            warn_line("calibrate", (
+                f"{args.scores}: {missing.shape[0]} of {scores.shape[0]} rows have no score in "
+                f"column {shown(args.score_column)}: {_missing_rows_text(args.scores, missing)}; "
+                f"they are written with an empty {shown(args.output_column)} (--missing refuse "
+                "stops at the first instead)"))
         stages.start("calibrating")
-        log_odds = to_log_odds(scores, scale)
-        out = np.empty(log_odds.shape[0])
+        log_odds = to_log_odds(scores[np.isfinite(scores)], scale)
+        given = np.empty(log_odds.shape[0])
         starts = range(0, log_odds.shape[0], _CHUNK)
         for start in progress(starts, desc="calibrating", total=len(starts)):
-            out[start : start + _CHUNK] = cal_map.predict(log_odds[start : start + _CHUNK])
-        if not np.all(np.isfinite(out)):
+            given[start : start + _CHUNK] = cal_map.predict(log_odds[start : start + _CHUNK])
+        if not np.all(np.isfinite(given)):
             raise DataError(f"{args.map}: the map gives probabilities that are not finite")
+        out = np.full(scores.shape[0], np.nan)
+        out[np.isfinite(scores)] = given
         dialect = frame.attrs.get("csv_dialect")
         frame = frame.copy()
         frame.attrs.clear()
         if not is_numeric_dtype(frame[args.score_column].dtype):
             # a CSV column read as text: written as the numbers it holds (with the decimal
-            # mark of the file it came from);
+            # mark of the file it came from; a missing score as an empty field);
             # a Parquet column of numbers keeps its type (float32 stays float32)
             frame[args.score_column] = scores
         frame[args.output_column] = out
         stages.start("writing")
-        write_table(frame, args.out, dialect=dialect)
+        write_table(frame, "-" if to_stdout(args.out) else args.out, dialect=dialect)
+    # with the table on standard output, the summary goes to stderr
     print(
         f"wrote {frame.shape[0]} rows with column {shown(args.output_column)} "
-        f"({description['method']} map, {scale} scores) to {args.out}"
+        f"({description['method']} map, {scale} scores) to "
+        f"{'standard output' if to_stdout(args.out) else args.out}",
+        file=sys.stderr if to_stdout(args.out) else sys.stdout,
     )
     return 0
 
@@ -425,10 +484,11 @@ def register(subparsers: Any) -> None:
     add_late_label_flags(fit)
     add_weight_flag(fit)
     fit.add_argument("--out", required=True, metavar="MAP.json",
-                     help="where to save the map (.json)")
+                     help="where to save the map (.json); '-': print the map on standard "
+                     "output (the summary then goes to stderr)")
 
     def run_fit(args: argparse.Namespace) -> int:
-        check_out_suffix(fit, args.out, (".json",))
+        check_out_suffix(fit, args.out, (".json",), stdout="the map")
         check_writable(args.out)
         return _fit(args)
 
@@ -453,16 +513,26 @@ def register(subparsers: Any) -> None:
         "--output-column", default="calibrated_probability", metavar="NAME",
         help="name of the added column (default calibrated_probability)",
     )
-    apply.add_argument("--out", required=True, metavar="FILE",
-                       help="output file: .csv, .parquet or .pq")
+    apply.add_argument(
+        "--missing", choices=("keep", "refuse"), default="keep",
+        help="rows whose score is missing (an empty field, NA, a Parquet null): keep (default) "
+        "writes them with an empty calibrated probability and warns, counting them and naming "
+        "the first rows; refuse stops at the first one",
+    )
+    apply.add_argument("--out", default=None, metavar="FILE",
+                       help="output file: .csv, .parquet or .pq; '-' or left out: CSV on "
+                       "standard output (the summary line then goes to stderr)")
 
     def run_apply(args: argparse.Namespace) -> int:
         if not args.output_column.strip():
             # an empty name is written as an empty header cell, read back as "Unnamed: k"
             apply.error(f"--output-column {args.output_column!r}: give a name with at least "
                         "one visible character")
-        check_out_suffix(apply, args.out, TABLE_SUFFIXES)
-        check_writable(args.out)
+        if to_stdout(args.out):
+            args.out = None  # standard output: CSV
+        else:
+            check_out_suffix(apply, args.out, TABLE_SUFFIXES)
+            check_writable(args.out)
         return _apply(args)
 
     apply.set_defaults(func=run_apply)

@@ -24,7 +24,8 @@ __all__ = [
     "TABLE_SUFFIXES", "table_kind", "one_line", "warn_line", "check_ranking", "check_row_count",
     "FEW_ROWS", "MIN_RESAMPLES", "add_positive_label_flag", "add_format_flag",
     "add_resamples_flag", "whole_number", "add_seed_flag", "MAX_SEED", "add_weight_flag",
-    "weight_summary", "not_a_number", "FREQUENCY_WEIGHT_LIMIT",
+    "weight_summary", "not_a_number", "FREQUENCY_WEIGHT_LIMIT", "StandardStream",
+    "is_standard_stream", "INPUT_OPTIONS",
 ]
 
 
@@ -114,15 +115,49 @@ def clean(text: str) -> str:
     )
 
 def table_kind(path: Path) -> str:
-    """"Parquet" by the file's extension (see :data:`PARQUET_SUFFIXES`), "CSV" otherwise."""
+    """"Parquet" by the file's extension (see :data:`PARQUET_SUFFIXES`), "CSV" otherwise; for
+    standard input, what its first bytes showed (:class:`StandardStream`)."""
+    if isinstance(path, StandardStream):
+        return path.kind or "CSV"
     return "Parquet" if path.suffix.lower() in PARQUET_SUFFIXES else "CSV"
+
+
+class StandardStream(str):
+    """``-`` given for a file: standard input (or output), named so in messages.
+
+    The command line swaps every input option given as ``-`` for one of these before a verb
+    runs, so that the readers know to read standard input and every message names it as
+    "standard input" rather than "-". ``kind`` is set once the stream is read: "CSV" or
+    "Parquet", from its first bytes.
+
+    Examples
+    --------
+    >>> name = StandardStream()
+    >>> str(name), is_standard_stream(name), is_standard_stream("-"), is_standard_stream("a.csv")
+    ('standard input', True, True, False)
+    """
+
+    kind: str | None = None
+
+    def __new__(cls, text: str = "standard input") -> StandardStream:
+        return super().__new__(cls, text)
+
+
+def is_standard_stream(path: Any) -> bool:
+    """True for ``-`` or a :class:`StandardStream`: standard input or output."""
+    return isinstance(path, StandardStream) or str(path) == "-"
+
+
+#: the options that name a file to read, by their argparse destination
+INPUT_OPTIONS = {"scores": "--scores", "unlabelled": "--unlabelled", "reference": "--reference",
+                 "map": "--map"}
 
 
 def row_number(path: str | Path, row: int) -> str:
     """Where the 0-based data row ``row`` of a table is, in a message: "row 7 (counting the
     header as row 1)" in a CSV file (as a spreadsheet numbers it), "row 6 (counting the first
     row as row 1)" in a Parquet file (which has no header line)."""
-    if table_kind(Path(path)) == "Parquet":
+    if table_kind(path if isinstance(path, StandardStream) else Path(path)) == "Parquet":
         return f"row {row + 1} (counting the first row as row 1)"
     return f"row {row + 2} (counting the header as row 1)"
 

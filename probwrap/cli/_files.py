@@ -11,19 +11,39 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-from ._common import TABLE_SUFFIXES, DataError, one_line, require, table_kind
+from ._common import (
+    TABLE_SUFFIXES,
+    DataError,
+    is_standard_stream,
+    one_line,
+    require,
+    table_kind,
+)
 
-__all__ = ["check_out_suffix", "check_writable", "write_atomic", "write_text", "write_table"]
+__all__ = ["check_out_suffix", "check_writable", "write_atomic", "write_text", "write_table",
+           "to_stdout"]
+
+
+def to_stdout(out: Any) -> bool:
+    """True when ``--out`` is ``-`` (or left out where that means standard output)."""
+    return out is None or is_standard_stream(out)
 
 
 def check_out_suffix(
-    parser: argparse.ArgumentParser, out: str, suffixes: tuple[str, ...], flag: str = "--out"
+    parser: argparse.ArgumentParser, out: str, suffixes: tuple[str, ...], flag: str = "--out",
+    *, stdout: str | None = None,
 ) -> None:
-    """A usage error (exit 2) unless ``out`` ends with one of ``suffixes``."""
+    """A usage error (exit 2) unless ``out`` ends with one of ``suffixes``.
+
+    ``stdout``: what ``-`` writes to standard output (e.g. "the table as CSV"); None: ``-`` is
+    refused, saying why.
+    """
     if out == "-":
+        if stdout is not None:
+            return
         parser.error(
-            f"{flag} -: writing to standard output is not supported; give a file name ending "
-            f"in {', '.join(suffixes)}"
+            f"{flag} -: this verb does not write to standard output (it prints its summary "
+            f"there); give a file name ending in {', '.join(suffixes)}"
         )
     if Path(out).name.lower() in suffixes:
         # ".json" is a name with no extension (a hidden file) to Python and to the user's shell
@@ -54,6 +74,8 @@ def check_writable(path: str | Path, *, folder: bool = False) -> None:
 
     ``folder=True``: ``path`` is a folder to write into (created when missing).
     """
+    if to_stdout(path):
+        return
     path = Path(path)
     if path.is_symlink():  # written through (see write_atomic): check the linked file's folder
         path = Path(os.path.realpath(path))
@@ -125,8 +147,24 @@ def write_atomic(path: str | Path, write: Callable[[Path], None]) -> None:
             os.close(dir_fd)
 
 
+def _write_stdout(data: bytes) -> None:
+    """Bytes to standard output, past any text already buffered there."""
+    import sys
+
+    sys.stdout.flush()
+    target = getattr(sys.stdout, "buffer", None)
+    if target is None:  # a text-only stream (rare): decode as written
+        sys.stdout.write(data.decode("utf-8"))
+    else:
+        target.write(data)
+        target.flush()
+
+
 def write_text(path: str | Path, text: str) -> None:
-    """Write UTF-8 text atomically (see :func:`write_atomic`)."""
+    """Write UTF-8 text atomically (see :func:`write_atomic`); ``-``: to standard output."""
+    if to_stdout(path):
+        _write_stdout(text.encode("utf-8"))
+        return
     write_atomic(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
 
@@ -139,8 +177,22 @@ def write_table(frame: Any, path: str | Path, *, dialect: dict[str, Any] | None 
     read the encoding from it), a file with Windows line endings keeps them and a file that
     started with a spreadsheet's ``sep=X`` line starts with it.
     """
-    path = Path(path)
     dialect = dialect or {}
+    if to_stdout(path):
+        # standard output: CSV, written the way the input was (separator, decimal mark,
+        # byte-order mark, line ends, a "sep=X" line)
+        import io
+
+        sep, newline = dialect.get("sep", ","), dialect.get("newline", "\n")
+        buffer = io.StringIO()
+        if dialect.get("sep_line"):
+            buffer.write(f"sep={sep}{newline}")
+        frame.to_csv(buffer, index=False, sep=sep, decimal=dialect.get("decimal", "."),
+                     lineterminator=newline)
+        _write_stdout(("\ufeff" if dialect.get("bom") else "").encode("utf-8")
+                      + buffer.getvalue().encode("utf-8"))
+        return
+    path = Path(path)
     if path.suffix.lower() not in TABLE_SUFFIXES:
         raise DataError(f"{path}: unsupported file type; use one of {', '.join(TABLE_SUFFIXES)}")
     if table_kind(path) == "Parquet":

@@ -21,7 +21,9 @@ import numpy as np
 from ._common import (
     FREQUENCY_WEIGHT_LIMIT,
     DataError,
+    StandardStream,
     clean,
+    is_standard_stream,
     one_line,
     require,
     row_number,
@@ -56,9 +58,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     the other columns are read as usual.
     """
     pd = require("pandas")
-    if str(path) == "-":
-        raise DataError("-: reading a table from standard input is not supported; save it to a "
-                        "file (CSV, compressed CSV or Parquet) and give the file's path")
+    if is_standard_stream(path):
+        return _read_standard_input(path, exact=exact, as_text=as_text, text=text)
     path = Path(path)
     if not path.exists():
         raise DataError(f"{path}: file not found")
@@ -140,6 +141,53 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     if frame.shape[0] == 0:
         raise DataError(f"{path}: the file has a header but no rows")
     return frame
+
+
+#: the first bytes of the forms standard input may take, and the extension a file of that form
+#: would have (so that it is read as that file would be)
+_MAGIC = ((b"PAR1", ".parquet"), (b"\x1f\x8b", ".csv.gz"), (b"BZh", ".csv.bz2"),
+          (b"\xfd7zXZ\x00", ".csv.xz"), (b"PK\x03\x04", ".zip"))
+
+
+def _read_standard_input(name: Any, **options: Any) -> Any:
+    """Read a table from standard input: CSV, compressed CSV or Parquet, told by its first
+    bytes (Parquet files start with ``PAR1``, gzip with ``1f 8b``, ...).
+
+    The stream is copied to a temporary file first (in blocks; the whole table is never held
+    twice), since the CSV reader looks at the text more than once (separator, decimal mark,
+    header) and Parquet needs to seek; the file is removed once the table is read. Messages
+    name "standard input", and ``name.kind`` (a :class:`StandardStream`) records whether it
+    held CSV or Parquet, so that rows are numbered as in a file of that kind.
+    """
+    import shutil
+    import sys
+    import tempfile
+
+    stream = name if isinstance(name, StandardStream) else StandardStream()
+    source = getattr(sys.stdin, "buffer", None)
+    if sys.stdin is None or source is None:
+        raise DataError(f"{stream}: there is no standard input to read")
+    if sys.stdin.isatty():
+        print("probwrap: reading the table from standard input (end it with Ctrl-D, or Ctrl-Z "
+              "then Enter on Windows)", file=sys.stderr)
+    with tempfile.TemporaryDirectory(prefix="probwrap-stdin-") as folder:
+        raw = Path(folder) / "stdin"
+        try:
+            with open(raw, "wb") as handle:
+                shutil.copyfileobj(source, handle, 1 << 20)
+        except OSError as exc:
+            raise DataError(f"{stream}: cannot be read ({exc.strerror or exc})") from None
+        with open(raw, "rb") as handle:
+            start = handle.read(8)
+        if not start:
+            raise DataError(f"{stream}: nothing was sent to it (it is empty)")
+        suffix = next((s for magic, s in _MAGIC if start.startswith(magic)), ".csv")
+        path = raw.rename(raw.with_name("stdin" + suffix))
+        stream.kind = table_kind(path)
+        try:
+            return read_table(path, **options)
+        except DataError as exc:
+            raise DataError(str(exc).replace(str(path), str(stream))) from None
 
 
 #: the words pandas reads as a missing value by default (its documented ``na_values`` list)
@@ -416,10 +464,12 @@ def _row(path: str | Path, column: str, row: int) -> str:
 
 
 def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
-                   infinite_hint: str = "") -> np.ndarray:
+                   infinite_hint: str = "", allow_missing: bool = False) -> np.ndarray:
     """One column as finite floats, or a DataError naming the file, column and first bad row.
 
     ``infinite_hint`` is added to the message when the first bad value is an infinite number.
+    ``allow_missing``: missing values (an empty field, ``NA``, a Parquet null) are NaN rather
+    than an error; any other value that is not a finite number is still refused.
 
     Text is converted with NumPy's correctly rounded parser (every float written with enough
     digits reads back exactly).
@@ -453,6 +503,8 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
                 except ValueError:
                     values[i] = np.nan
     bad = ~np.isfinite(values)
+    if allow_missing and bad.any():
+        bad &= ~series.isna().to_numpy()
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
         raw_value = series.iloc[row]
@@ -483,16 +535,19 @@ def _number_hint(value: Any) -> str:
     return ""
 
 
-def probability_column(frame: Any, column: str, path: str | Path, *, flag: str) -> np.ndarray:
-    """A column of probabilities in [0, 1], or a DataError naming the first bad row."""
-    values = numeric_column(frame, column, path, flag=flag)
-    bad = (values < 0.0) | (values > 1.0)
+def probability_column(frame: Any, column: str, path: str | Path, *, flag: str,
+                       allow_missing: bool = False) -> np.ndarray:
+    """A column of probabilities in [0, 1], or a DataError naming the first bad row
+    (``allow_missing``: missing values are NaN, as for :func:`numeric_column`)."""
+    values = numeric_column(frame, column, path, flag=flag, allow_missing=allow_missing)
+    with np.errstate(invalid="ignore"):
+        bad = (values < 0.0) | (values > 1.0)
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
-        if values.min() >= 0.0 and values.max() <= 100.0:
+        if np.nanmin(values) >= 0.0 and np.nanmax(values) <= 100.0:
             # all in [0, 100] with some above 1: a share written in percent
-            hint = (f"the column holds numbers from {shown(values.min())} to "
-                    f"{shown(values.max())}, which look like percentages: divide them by 100; for log-odds scores use "
+            hint = (f"the column holds numbers from {shown(np.nanmin(values))} to "
+                    f"{shown(np.nanmax(values))}, which look like percentages: divide them by 100; for log-odds scores use "
                     "--scale log-odds")
         else:
             hint = "use --scale log-odds for log-odds scores"
