@@ -139,10 +139,13 @@ def test_cli_equal_weights_keep_it_unequal_weights_say_why(capsys, forty, forty_
     equal = json.loads(_cli(capsys, *_cutoff_args(forty_csv, "--weight-column", "w",
                                                   "--format", "json"))[0])
     assert equal["cutoff_exact_range"] == plain["cutoff_exact_range"]
+    assert equal["cutoff_exact_range_counts"] == "rows"
+    # unequal weights: computed since 4 December 2026, on Kish's effective rows between two
+    # cutoffs (tests/test_cutoff_exact_weighted.py); null with a note before
     uneven = json.loads(_cli(capsys, *_cutoff_args(forty_csv, "--weight-column", "w_uneven",
                                                    "--format", "json"))[0])
-    assert uneven["cutoff_exact_range"] is None
-    assert "unequal row weights" in uneven["cutoff_exact_range_note"]
+    assert uneven["cutoff_exact_range"] is not None
+    assert uneven["cutoff_exact_range_counts"] == "kish_effective_rows"
     capped = json.loads(_cli(capsys, *_cutoff_args(forty_csv, "--capacity", 0.3,
                                                    "--format", "json"))[0])
     assert capped["cutoff_exact_range"] is None and "capacity" in capped["cutoff_exact_range_note"]
@@ -179,11 +182,14 @@ def test_tally_interval_equals_the_row_interval(forty):
     with pytest.warns(CutoffIntervalCoverageWarning):
         weighted = tally_cutoff_interval(_tally(p, y, np.full(y.shape[0], 3.0)), COSTS)
     assert (weighted.exact_low, weighted.exact_high) == (tallied.exact_low, tallied.exact_high)
-    # unequal weights: no range (as on rows), and the coverage warning without it
-    with pytest.warns(CutoffIntervalCoverageWarning) as rec:
-        uneven = tally_cutoff_interval(_tally(p, y, np.linspace(1.0, 2.0, y.shape[0])), COSTS)
-    assert np.isnan(uneven.exact_low) and np.isnan(uneven.exact_high)
-    assert "exact binomial" not in str(rec[0].message)
+    # unequal weights: the range of the rows with the same weights (Kish's effective rows
+    # between two cutoffs; NaN before 4 December 2026), quoted in the coverage warning
+    w = np.linspace(1.0, 2.0, y.shape[0])
+    with pytest.warns(CutoffIntervalCoverageWarning, match="exact binomial"):
+        uneven = tally_cutoff_interval(_tally(p, y, w), COSTS)
+    on_rows = _quiet_interval(p, y, n_resamples=20, random_state=0, sample_weight=w)
+    assert uneven.exact_low == pytest.approx(on_rows.exact_low, abs=1e-12)
+    assert uneven.exact_high == pytest.approx(on_rows.exact_high, abs=1e-12)
     # a capacity: none either
     with pytest.warns(CutoffIntervalCoverageWarning):
         capped = tally_cutoff_interval(_tally(p, y), COSTS, capacity=0.3)

@@ -126,13 +126,12 @@ def test_equal_weights_any_scale_give_the_same_range(scored):
 
 
 def test_no_exact_range_where_rows_are_not_counts_or_enough(scored):
+    # (unequal weights have one since 4 December 2026: tests/test_cutoff_exact_weighted.py)
     p, y = _draw(*scored, 30, 1)
-    w = np.linspace(0.5, 2.0, y.shape[0])
     costs = {"fp": 1.0, "fn": 4.0}
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", CutoffIntervalCoverageWarning)
         cases = [
-            cutoff_interval(p, y, costs, sample_weight=w, n_resamples=20, random_state=0),
             cutoff_interval(p, y, costs, capacity=0.3, n_resamples=20, random_state=0),
             cutoff_interval(p, y, costs, groups=np.arange(y.shape[0]) // 2, n_resamples=20,
                             random_state=0),

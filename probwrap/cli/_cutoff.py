@@ -151,8 +151,9 @@ def cutoff_summary(
             scores, y, matrix, capacity=capacity, score_bounds=bounds, n_resamples=n_resamples,
             confidence_level=confidence_level, random_state=seed, sample_weight=sample_weight,
         )
-    # below 100 rows of equal weight, the cutoffs no one-sided exact binomial test sets apart
-    # (CutoffInterval.exact_low / exact_high; needs no resampling, so with --resamples 0 too)
+    # below 100 (effective) rows, the cutoffs no one-sided exact binomial test sets apart
+    # (CutoffInterval.exact_low / exact_high; needs no resampling, so with --resamples 0 too);
+    # unequal weights count the rows between two cutoffs as Kish's effective rows
     exact_low, exact_high, exact_note = exact_cutoff_range(
         scores, y, matrix, sample_weight=sample_weight, capacity=capacity, score_bounds=bounds,
         confidence_level=confidence_level,
@@ -175,6 +176,11 @@ def cutoff_summary(
                                else [float(exact_low), float(exact_high)]),
         # why there is no exact range (None when there is one)
         "cutoff_exact_range_note": exact_note,
+        # what the exact tests count: "rows", or "kish_effective_rows" for unequal weights
+        "cutoff_exact_range_counts": None if exact_note is not None else (
+            "rows" if sample_weight is None
+            or np.ptp(np.asarray(sample_weight)[np.asarray(sample_weight) > 0]) == 0
+            else "kish_effective_rows"),
         "confidence_level": float(confidence_level),
         "n_resamples": int(n_resamples),
         "expected_cost": float(res.cost) * unit,
@@ -302,9 +308,12 @@ def _exact_lines(out: dict[str, Any], level: int) -> list[str]:
     exact, note = out.get("cutoff_exact_range"), out.get("cutoff_exact_range_note")
     if exact is not None:
         lo_t, hi_t = cutoff_texts(exact)
+        counted = ("; unequal weights: the rows between two cutoffs count as Kish's "
+                   "effective rows" if out.get("cutoff_exact_range_counts")
+                   == "kish_effective_rows" else "")
         return [f"  exact-test range      [{lo_t}, {hi_t}]   (no one-sided exact binomial test "
                 f"at {100 - level}% shows one of these cutoffs dearer than another; fewer than "
-                "100 rows)"]
+                f"100 (effective) rows{counted})"]
     if note is None or note.startswith("not computed: 100 or more"):
         return []
     return [f"  exact-test range      {note}"]

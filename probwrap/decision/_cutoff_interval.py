@@ -52,14 +52,16 @@ class CutoffInterval:
         True when the bootstrap percentiles alone fell inside that range and ``(low, high)`` was
         widened to contain it (common on a few dozen rows or fewer).
     exact_low, exact_high : float
-        Below 100 rows (unweighted, one cost matrix for every row, no ``capacity`` and no
+        Below 100 effective rows (one cost matrix for every row, no ``capacity`` and no
         ``groups``): the range of cutoffs that no exact binomial test shows dearer than another
         cutoff (see :func:`cutoff_interval`), which covered the population's least-cost cutoff
         in 97.5-100 % of draws of 20 and 50 rows where ``(low, high)`` covered it in 68-95 %,
-        at 1.5-1.9 times the width. NaN otherwise. Intervals drawn from a tally (Dask or
-        Spark fits through their tallies, ``probwrap.scale._bootstrap.tally_cutoff_interval``)
-        compute it from the tally's rows per bin when the tally shows equal weights, NaN
-        otherwise; the command line's ``cutoff`` verb reports it as ``cutoff_exact_range``.
+        at 1.5-1.9 times the width. NaN otherwise. With unequal weights the rows between two
+        cutoffs count as Kish's effective rows (since 4 December 2026; NaN before). Intervals
+        drawn from a tally (Dask or Spark fits through their tallies,
+        ``probwrap.scale._bootstrap.tally_cutoff_interval``) compute it from the tally's rows
+        per bin, or its weights and squared weights per bin; the command line's ``cutoff``
+        verb reports it as ``cutoff_exact_range``.
     """
 
     low: float
@@ -76,9 +78,32 @@ class CutoffInterval:
     exact_high: float = float("nan")
 
 
+def _binomial_tails(hits: np.ndarray, between: np.ndarray, even: float
+                    ) -> tuple[np.ndarray, np.ndarray]:
+    """``P(X <= hits)`` and ``P(X >= hits)`` for ``X ~ Binomial(between, even)``, through the
+    regularised incomplete beta function, the binomial tails' continuous extension to counts
+    that are not whole: ``I_{1-p}(n - c, c + 1)`` and ``I_p(c, n - c + 1)`` (equal to
+    ``scipy.stats.binom.cdf(c, n, p)`` and ``binom.sf(c - 1, n, p)`` for whole ``c`` and ``n``).
+    Counts within 1e-9 of a whole number are read as it (rounding of sums of weights)."""
+    from scipy import special
+
+    c, n = np.broadcast_arrays(np.asarray(hits, float), np.asarray(between, float))
+    tol = 1e-9 * np.maximum(n, 1.0)
+    c = np.where(np.abs(c - np.round(c)) <= tol, np.round(c), c)
+    n = np.where(np.abs(n - np.round(n)) <= tol, np.round(n), n)
+    c = np.clip(c, 0.0, n)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        lower = np.where((n > 0) & (c < n),
+                         special.betainc(np.maximum(n - c, 1e-300), c + 1.0, 1.0 - even), 1.0)
+        upper = np.where((n > 0) & (c > 0),
+                         special.betainc(np.maximum(c, 1e-300), n - c + 1.0, even), 1.0)
+    return lower, upper
+
+
 def _exact_range(rows: _SortedRows, y_sorted: np.ndarray, matrix: np.ndarray,
                  level: float, tie_low: float, tie_high: float,
-                 counts_sorted: np.ndarray | None = None) -> tuple[float, float]:
+                 counts_sorted: np.ndarray | None = None,
+                 squares_sorted: np.ndarray | None = None) -> tuple[float, float]:
     """Cutoffs that no one-sided exact binomial test at ``1 - level`` shows dearer than another.
 
     Decisions ``j < k`` differ only on the rows scoring between them: ``j`` takes the positive
@@ -93,6 +118,16 @@ def _exact_range(rows: _SortedRows, y_sorted: np.ndarray, matrix: np.ndarray,
     ``y_sorted`` holds, in score order, each entry's positives and ``counts_sorted`` its rows
     (None: one row per entry, ``y_sorted`` its 0/1 label); entries are rows, or the
     (bin, label) cells of a tally whose weights count rows.
+
+    Unequal weights (``squares_sorted`` given): ``counts_sorted`` holds each entry's weight,
+    ``y_sorted`` its positive weight and ``squares_sorted`` its sum of squared weights. The
+    rows between two decisions then count as Kish's (1965) effective number
+    ``n = (sum w)^2 / sum w^2`` with the weighted positive share kept, ``c = n * (sum w y) /
+    (sum w)``, and the tails are the binomial's continuous extension (:func:`_binomial_tails`):
+    when every row between shares the positive probability ``even``, the weighted share has
+    mean ``even`` and variance ``even (1 - even) / n``, as a binomial share of ``n`` rows (the
+    effective-size reading of a weighted proportion of Kish 1965 and Korn & Graubard 1998, from
+    memory). Equal weights give back the counts of rows; scaling the weights changes nothing.
     """
     from scipy.stats import binom
 
@@ -108,6 +143,22 @@ def _exact_range(rows: _SortedRows, y_sorted: np.ndarray, matrix: np.ndarray,
         cnt = np.concatenate([[0.0], np.cumsum(counts_sorted)[rows.ends]])
     between = cnt[None, :] - cnt[:, None]  # rows between decision j (row) and k (column)
     hits = pos[None, :] - pos[:, None]
+    if squares_sorted is not None:
+        # weights: Kish's effective rows between two decisions, the weighted share kept
+        sq = np.concatenate([[0.0], np.cumsum(squares_sorted)[rows.ends]])
+        squares = np.abs(sq[None, :] - sq[:, None])
+        size = np.abs(between)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            n_eff = np.where(squares > 0, size * size / np.where(squares > 0, squares, 1.0), 0.0)
+            c_eff = np.where(size > 0, np.abs(hits) * n_eff / np.where(size > 0, size, 1.0), 0.0)
+        lower, upper = _binomial_tails(c_eff, n_eff, even)
+        up = np.where(between > 0, lower, 1.0)
+        down = np.where(between < 0, upper, 1.0)
+        kept = np.flatnonzero(np.minimum(up, down).min(axis=1) >= 1.0 - level)
+        if kept.size == 0:
+            return tie_low, tie_high
+        return (min(float(rows.lower[kept.min()]), tie_low),
+                max(float(rows.upper[kept.max()]), tie_high))
     up = np.where(between > 0, binom.cdf(hits, np.maximum(between, 1), even), 1.0)
     down = np.where(between < 0, binom.sf(-hits - 1, np.maximum(-between, 1), even), 1.0)
     kept = np.flatnonzero(np.minimum(up, down).min(axis=1) >= 1.0 - level)
@@ -125,15 +176,18 @@ EXACT_RANGE_NOTES = {
     "capacity": "not computed: a capacity limit (the exact tests compare cutoffs by cost alone)",
     "costs": "not computed: costs that differ from row to row (the tests need one cost matrix)",
     "groups": "not computed: grouped rows (the tests count rows, not groups)",
-    "weights": "not computed: unequal row weights (the tests count rows; weights are not counts "
-               "of rows there)",
-    "tally": "not computed: the tally's bins do not show equal row weights",
+    "tally": "not computed: the tally carries neither its rows per bin nor its squared weights "
+             "per bin (a tally pickled before 4 December 2026), so its effective rows between "
+             "two cutoffs are unknown",
 }
 
 
 def exact_range_note(n_effective: float, *, capacity: Any = None, per_row_costs: bool = False,
                      groups: bool = False, equal_weights: bool = True) -> str | None:
     """Why a cutoff interval has no exact range (the first reason), or None when it has one.
+
+    ``equal_weights`` is no longer a reason (since 4 December 2026 unequal weights count the
+    rows between two cutoffs by Kish's effective number); it is kept for callers that pass it.
 
     Examples
     --------
@@ -149,8 +203,6 @@ def exact_range_note(n_effective: float, *, capacity: Any = None, per_row_costs:
         return EXACT_RANGE_NOTES["costs"]
     if groups:
         return EXACT_RANGE_NOTES["groups"]
-    if not equal_weights:
-        return EXACT_RANGE_NOTES["weights"]
     return None
 
 
@@ -189,48 +241,78 @@ def exact_cutoff_range(
     present = np.flatnonzero(w1 > 0)
     wp = w1[present]
     effective = float(wp.sum() ** 2 / np.dot(wp, wp)) if present.size else 0.0
-    note = exact_range_note(effective, capacity=cap, per_row_costs=matrix.ndim != 2,
-                            equal_weights=bool(np.ptp(wp) == 0.0) if present.size else True)
+    note = exact_range_note(effective, capacity=cap, per_row_costs=matrix.ndim != 2)
     if note is not None or present.size == 0:
         return float("nan"), float("nan"), note
     rows = _SortedRows(s[present], bounds)
-    rc = _RowCosts(matrix, yi[present], None)
+    equal = bool(np.ptp(wp) == 0.0)
+    rc = _RowCosts(matrix, yi[present], None if equal else wp)
     tie_low, tie_high = (float(v) for v in _search_rows(s[present], rc, None, bounds).interval)
-    lo, hi = _exact_range(rows, yi[present][rows.order].astype(float), matrix,
-                          float(confidence_level), tie_low, tie_high)
+    lo, hi = _row_exact_range(rows, yi[present], wp, matrix, float(confidence_level),
+                              tie_low, tie_high)
     return lo, hi, None
 
 
+def _row_exact_range(rows: _SortedRows, y: np.ndarray, w: np.ndarray, matrix: np.ndarray,
+                     level: float, tie_low: float, tie_high: float) -> tuple[float, float]:
+    """:func:`_exact_range` of rows of positive weight ``w``: counts of rows when the weights
+    are equal, Kish's effective rows between two cutoffs otherwise."""
+    o = rows.order
+    if np.ptp(w) == 0.0:
+        return _exact_range(rows, y[o].astype(float), matrix, level, tie_low, tie_high)
+    u = w / w.max()  # (only the ratios matter; no square underflows or overflows)
+    return _exact_range(rows, (u * y)[o], matrix, level, tie_low, tie_high,
+                        counts_sorted=u[o], squares_sorted=(u * u)[o])
+
+
 def tally_exact_range(p: np.ndarray, y: np.ndarray, weights: np.ndarray, rows: np.ndarray | None,
-                      matrix: np.ndarray, capacity: float | None, level: float
-                      ) -> tuple[float, float, str | None]:
+                      matrix: np.ndarray, capacity: float | None, level: float,
+                      squares: np.ndarray | None = None) -> tuple[float, float, str | None]:
     """The exact range from tallied rows: one entry per (bin, label) with probability ``p``.
 
     ``weights`` are the entries' tallied weights; ``rows`` their numbers of rows of positive
-    weight (None: unknown, and no range). With equal row weights (``weights / rows`` the same everywhere) the entries count rows, and the range is
-    that of :func:`cutoff_interval` on rows scored at their bins' representative
+    weight (None: unknown); ``squares`` their sums of squared weights (None: unknown). With
+    equal row weights (``weights / rows`` the same everywhere) the entries count rows, and the
+    range is that of :func:`cutoff_interval` on rows scored at their bins' representative
     probabilities: equal to it on the rows themselves when no bin holds two distinct scores.
+    With unequal weights the entries count as Kish's effective rows from ``weights`` and
+    ``squares``, as :func:`cutoff_interval` counts unequal weights, with the same condition for
+    equality (the sums of a bin's weights and squared weights are those of its rows).
     Returns ``(exact_low, exact_high, note)`` as :func:`exact_cutoff_range` does.
     """
-    if rows is None:
+    equal = False
+    if rows is not None:
+        rows = np.asarray(rows, dtype=float)
+        keep = rows > 0
+        ratio = weights[keep] / rows[keep]
+        equal = bool(ratio.size and np.allclose(ratio, ratio[0], rtol=1e-9, atol=0.0))
+    if not equal and squares is None:
         return float("nan"), float("nan"), EXACT_RANGE_NOTES["tally"]
-    rows = np.asarray(rows, dtype=float)
-    keep = rows > 0
-    ratio = weights[keep] / rows[keep]
-    equal = bool(ratio.size and np.allclose(ratio, ratio[0], rtol=1e-9, atol=0.0))
-    n = float(rows.sum())
-    note = exact_range_note(n, capacity=capacity, per_row_costs=matrix.ndim != 2,
-                            equal_weights=equal)
+    if equal:
+        n = float(rows.sum())
+    else:
+        keep = np.asarray(weights, float) > 0
+        top = float(np.max(weights[keep]))
+        u, q = weights[keep] / top, np.asarray(squares, float)[keep] / (top * top)
+        n = float(u.sum() ** 2 / q.sum())
+    note = exact_range_note(n, capacity=capacity, per_row_costs=matrix.ndim != 2)
     if note is not None:
         return float("nan"), float("nan"), note
-    s, yk, rk = p[keep], y[keep], rows[keep]
+    s, yk = p[keep], y[keep]
     bounds = (0.0, 1.0)
     sorted_rows = _SortedRows(s, bounds)
-    rc = _RowCosts(matrix, yk, rk)
-    tie_low, tie_high = (float(v) for v in _search_rows(s, rc, None, bounds).interval)
     o = sorted_rows.order
-    lo, hi = _exact_range(sorted_rows, (yk * rk)[o].astype(float), matrix, float(level),
-                          tie_low, tie_high, counts_sorted=rk[o])
+    if equal:
+        rk = rows[keep]
+        rc = _RowCosts(matrix, yk, rk)
+        tie_low, tie_high = (float(v) for v in _search_rows(s, rc, None, bounds).interval)
+        lo, hi = _exact_range(sorted_rows, (yk * rk)[o].astype(float), matrix, float(level),
+                              tie_low, tie_high, counts_sorted=rk[o])
+        return lo, hi, None
+    rc = _RowCosts(matrix, yk, u)
+    tie_low, tie_high = (float(v) for v in _search_rows(s, rc, None, bounds).interval)
+    lo, hi = _exact_range(sorted_rows, (yk * u)[o], matrix, float(level), tie_low, tie_high,
+                          counts_sorted=u[o], squares_sorted=q[o])
     return lo, hi, None
 
 
@@ -303,7 +385,7 @@ def cutoff_interval(
     fewer than 100 effective rows (Kish) a :class:`CutoffIntervalCoverageWarning` says so; with
     ``groups``, fewer than 100 effective groups (Kish's size of the groups' total weights, the
     number of groups when they weigh alike), since whole groups are what the resamples draw.
-    There, with equal weights, one cost matrix for all rows, no ``capacity`` and no
+    There, with one cost matrix for all rows, no ``capacity`` and no
     ``groups``, ``exact_low`` / ``exact_high`` give a wider range that did cover: a cutoff is
     left out of it only when, for some other cutoff, the rows scoring between the two hold so
     few (or so many) positives that a one-sided exact binomial test at ``1 - confidence_level``
@@ -311,7 +393,11 @@ def cutoff_interval(
     rows like these). It covered in 97.5-100 % of draws of 20 and 50 rows (95 % level), at
     1.5-1.9 times the width (``benchmarks/cutoff_interval_small.py --compare``); neither the
     bootstrap of ``m`` of the ``n`` rows nor a bootstrap test of the excess cost came closer to
-    the nominal level without being far wider.
+    the nominal level without being far wider. With unequal weights (since 4 December 2026)
+    the rows between two cutoffs count as Kish's (1965) effective number ``(sum w)^2 / sum
+    w^2`` with their weighted positive share kept, and the binomial tails are the regularised
+    incomplete beta functions they equal for whole counts: under the null the weighted share
+    has the binomial share's mean and variance exactly; equal weights give back the counts.
 
     The rows are sorted once; each bootstrap resample only re-weights them (a row drawn ``c``
     times gets ``c`` times its weight) and repeats the cumulative sums, so a resample costs O(n).
@@ -423,12 +509,10 @@ def cutoff_interval(
     effective = float(sizes.sum() ** 2 / np.dot(sizes, sizes))
     exact_low = exact_high = float("nan")
     if exact_range_note(effective, capacity=cap, per_row_costs=matrix.ndim != 2,
-                        groups=groups is not None,
-                        equal_weights=bool(np.ptp(wp) == 0.0)) is None:
-        # equal weights: the rows count as rows
-        exact_low, exact_high = _exact_range(
-            rows, yi[present][rows.order].astype(float), matrix, float(confidence_level),
-            tie_low, tie_high)
+                        groups=groups is not None) is None:
+        # equal weights: the rows count as rows; unequal: Kish's rows between two cutoffs
+        exact_low, exact_high = _row_exact_range(rows, yi[present], wp, matrix,
+                                                 float(confidence_level), tie_low, tie_high)
     if effective < FEW_INTERVAL_ROWS:
         units = ("(effective) rows" if unit_of_row is None else
                  f"(effective) groups, the units it resamples ({n} rows in {n_units} groups)")

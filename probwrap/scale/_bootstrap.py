@@ -46,7 +46,9 @@ def tally_cutoff_interval(
         ``fold_cutoffs`` is empty (the rows of a tally have no folds). Below 100 effective
         rows it warns as :func:`~probwrap.decision.cutoff_interval` does, and when the tally
         shows equal row weights (no ``capacity``) ``exact_low`` / ``exact_high`` are computed
-        from its rows per bin (NaN otherwise); ``tie_low`` / ``tie_high`` are NaN.
+        from its rows per bin, with unequal weights from its weights and squared weights per
+        bin (Kish's effective rows between two cutoffs, as on rows); NaN with a capacity.
+        ``tie_low`` / ``tie_high`` are NaN.
 
     Examples
     --------
@@ -108,8 +110,9 @@ def tally_exact_interval(tally: ScoreTally, p: np.ndarray, y: np.ndarray, weight
     weights, :func:`~probwrap.decision._cutoff_interval.tally_row_counts`). Below
     ``FEW_INTERVAL_ROWS`` effective rows a ``CutoffIntervalCoverageWarning`` says what
     :func:`probwrap.decision.cutoff_interval` says on rows, quoting the exact range, which is
-    computed as there from the rows' counts per bin (equal weights, one cost matrix, no
-    capacity); NaN where it is not.
+    computed as there from the rows' counts per bin (equal weights) or from the weights and
+    squared weights per bin (unequal weights: Kish's effective rows between two cutoffs), with
+    one cost matrix and no capacity; NaN where it is not.
     """
     from ..decision._cutoff import _prepare
     from ..decision._cutoff_interval import (
@@ -122,8 +125,13 @@ def tally_exact_interval(tally: ScoreTally, p: np.ndarray, y: np.ndarray, weight
     _, _, _, matrix, _ = _prepare(p, y, costs, None)
     if rows is None:
         rows = tally_row_counts(tally, weights)
+    # the squared weights behind each (bin, label), in the order of to_rows(): unequal weights
+    # count as Kish's effective rows between two cutoffs, as on rows
+    squares = tally.squared_row_weights() if tally.labelled else None
+    if squares is not None and squares.shape != np.shape(weights):
+        squares = None
     exact_low, exact_high, _ = tally_exact_range(p, y, weights, rows, matrix, capacity,
-                                                 float(confidence_level))
+                                                 float(confidence_level), squares)
     effective = tally.effective_rows
     if not np.isfinite(effective) and rows is not None:
         keep = rows > 0

@@ -205,6 +205,11 @@ class ScoreTally:
         positive, -1 when some positive weight is not a whole number (or beyond 2**53); None
         if unknown. The wrappers read it to say when their reading of the weights moves with
         their scale (``PriorShiftWrapper.fit``'s ``WeightScaleWarning``).
+    squared_counts : ndarray of shape (m, n_labels), default=None
+        Sum of the squared row weights of each label per bin (in the units of ``counts``): with
+        ``counts`` they give each cell's Kish's effective rows, which the exact cutoff range
+        of unequal weights counts (:func:`probwrap.decision.cutoff_interval`). None if unknown
+        (tallies pickled before 4 December 2026).
     weight_unit : float, default=1.0
         The rows' weights were divided by this power of two before they were tallied
         (``counts``, ``score_sums``, ``replicates`` and ``squared_weight`` are in its units): 1.0
@@ -242,6 +247,7 @@ class ScoreTally:
         rows_by_label: np.ndarray | None = None,
         weighted_rows_by_label: np.ndarray | None = None,
         weight_factor: int | None = None,
+        squared_counts: np.ndarray | None = None,
     ) -> None:
         self.bins = np.asarray(bins, dtype=np.int64)
         self.counts = np.asarray(counts, dtype=float)
@@ -276,6 +282,11 @@ class ScoreTally:
             weighted_rows_by_label, "weighted_rows_by_label"
         )
         self.weight_factor = None if weight_factor is None else int(weight_factor)
+        self.squared_counts = (None if squared_counts is None
+                               else np.asarray(squared_counts, dtype=float))
+        if self.squared_counts is not None and self.squared_counts.shape != self.counts.shape:
+            raise ValueError(f"`squared_counts` must have shape {self.counts.shape}; got "
+                             f"{self.squared_counts.shape}.")
 
     def _row_counts(self, values: Any, name: str) -> np.ndarray | None:
         if values is None:
@@ -291,6 +302,7 @@ class ScoreTally:
         state.setdefault("rows_by_label", None)
         state.setdefault("weighted_rows_by_label", None)
         state.setdefault("weight_factor", None)
+        state.setdefault("squared_counts", None)
         self.__dict__.update(state)
 
     # -- summaries -------------------------------------------------------------------------
@@ -409,6 +421,15 @@ class ScoreTally:
         reps = self._label_counts(self.replicates, positive)
         return reps[:, bin_idx, label]
 
+    def squared_row_weights(self, positive: int | None = None) -> np.ndarray | None:
+        """Sum of the squared weights behind each row of :meth:`to_rows`, shape (r,); None when
+        the tally does not carry them (``squared_counts``)."""
+        if self.squared_counts is None:
+            return None
+        counts = self._label_counts(self.counts, positive)
+        bin_idx, label = np.nonzero(counts > 0)
+        return self._label_counts(self.squared_counts, positive)[bin_idx, label]
+
     def replicate_bin_weights(self) -> np.ndarray:
         """Bootstrap replicate weights of the rows of :meth:`to_scores`, shape (n_replicates, m)."""
         if self.replicates is None:
@@ -468,11 +489,17 @@ class ScoreTally:
             if a.squared_weight is None or b.squared_weight is None
             else a.squared_weight + b.squared_weight
         )
+        squares = None
+        if a.squared_counts is not None and b.squared_counts is not None:
+            both = np.concatenate([a.squared_counts, b.squared_counts])
+            squares = np.column_stack(
+                [np.bincount(inv, weights=both[:, j], minlength=m)
+                 for j in range(self.n_labels)])
         out = ScoreTally(
             uniq, merged, sums, self.resolution, self.n_rows + other.n_rows, self.labelled,
             reps, sq, unit, _add_counts(self.rows_by_label, other.rows_by_label),
             _add_counts(self.weighted_rows_by_label, other.weighted_rows_by_label),
-            _merge_factor(self.weight_factor, other.weight_factor),
+            _merge_factor(self.weight_factor, other.weight_factor), squares,
         )
         out.kept_rows = _merge_kept(self, other)
         return out
@@ -488,10 +515,12 @@ class ScoreTally:
         keep = counts.sum(axis=1) > 0
         reps = None if self.replicates is None else np.ldexp(self.replicates, shift)[:, keep]
         sq = None if self.squared_weight is None else float(np.ldexp(self.squared_weight, 2 * shift))
+        squares = (None if self.squared_counts is None
+                   else np.ldexp(self.squared_counts, 2 * shift)[keep])
         return ScoreTally(
             self.bins[keep], counts[keep], np.ldexp(self.score_sums, shift)[keep],
             self.resolution, self.n_rows, self.labelled, reps, sq, unit, self.rows_by_label,
-            self.weighted_rows_by_label, self.weight_factor,
+            self.weighted_rows_by_label, self.weight_factor, squares,
         )
 
     __add__ = merge
@@ -581,7 +610,7 @@ def _tally_block(
             y is not None,
             np.empty((n_replicates, 0, cols_out)) if n_replicates else None,
             0.0, 1.0, np.zeros(cols_out, np.int64), np.zeros(cols_out, np.int64),
-            0 if sample_weight is not None else 1,
+            0 if sample_weight is not None else 1, np.empty((0, cols_out)),
         )
         if outputs is not None:
             empty.kept_rows = (np.asarray(outputs, dtype=float), None, None)
@@ -638,6 +667,8 @@ def _tally_block(
     labels_of = np.zeros(n, dtype=np.int64) if y is None else y_arr.astype(np.int64)
     cols = n_labels if y is not None else 1
     counts = np.bincount(idx * cols + labels_of, weights=w, minlength=m * cols).reshape(m, cols)
+    squares = (counts if sample_weight is None else np.bincount(
+        idx * cols + labels_of, weights=w * w, minlength=m * cols).reshape(m, cols))
     sums = np.bincount(idx, weights=w * s, minlength=m)
     occupied = counts.sum(axis=1) > 0
     bins = (np.arange(lo, hi + 1, dtype=np.int64) if uniq is None else uniq)[occupied]
@@ -659,7 +690,7 @@ def _tally_block(
         weighted = rows if w.min() > 0 else np.bincount(labels_of[w > 0], minlength=cols)
     out = ScoreTally(
         bins, counts[occupied], sums[occupied], resolution, n, y is not None, reps,
-        float(np.dot(w, w)), unit, rows, weighted, factor,
+        float(np.dot(w, w)), unit, rows, weighted, factor, squares[occupied],
     )
     if outputs is not None and n <= KEPT_ROWS:
         out.kept_rows = (
