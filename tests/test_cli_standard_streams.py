@@ -195,3 +195,18 @@ def test_a_real_pipe(files, tmp_path):
         proba_to_log_odds(frame["risk"].to_numpy()))
     np.testing.assert_array_equal(back["calibrated_probability"], expected)
     assert b"wrote 269 rows" in apply.stderr
+
+
+@pytest.mark.parametrize("which", ["--unlabelled", "--reference"])
+def test_prevalence_reads_either_file_from_standard_input(files, capsys, monkeypatch, which):
+    root, _ = files
+    argv = {"--unlabelled": root / "held.csv", "--reference": root / "held.csv"}
+    base = ["prevalence", "--score-column", "risk", "--label-column", "y", "--resamples", 20,
+            "--format", "json"]
+    code, from_files, err = run(capsys, *base, *[v for k, f in argv.items() for v in (k, f)])
+    assert code == 0, err
+    _feed(monkeypatch, (root / "held.parquet").read_bytes())
+    argv[which] = "-"
+    code, from_stream, err = run(capsys, *base, *[v for k, f in argv.items() for v in (k, f)])
+    assert code == 0, err
+    assert json.loads(from_stream) == json.loads(from_files)
