@@ -13,12 +13,15 @@ same verb on the same file, and the calibrated column with the map applied in Py
 
 from __future__ import annotations
 
+import bz2
 import gzip
 import io
 import json
+import lzma
 import os
 import subprocess
 import sys
+import zipfile
 from pathlib import Path
 
 import numpy as np
@@ -51,7 +54,12 @@ def files(tmp_path_factory):
                           "y": y[300:]})
     frame.to_csv(root / "held.csv", index=False)
     frame.to_parquet(root / "held.parquet")
-    (root / "held.csv.gz").write_bytes(gzip.compress((root / "held.csv").read_bytes()))
+    plain = (root / "held.csv").read_bytes()
+    (root / "held.csv.gz").write_bytes(gzip.compress(plain))
+    (root / "held.csv.bz2").write_bytes(bz2.compress(plain))
+    (root / "held.csv.xz").write_bytes(lzma.compress(plain))
+    with zipfile.ZipFile(root / "held.zip", "w") as archive:
+        archive.writestr("held.csv", plain)
     return root, frame
 
 
@@ -71,7 +79,8 @@ def _cutoff(capsys, path, *extra):
                *extra)
 
 
-@pytest.mark.parametrize("name", ["held.csv", "held.csv.gz", "held.parquet"])
+@pytest.mark.parametrize("name", ["held.csv", "held.csv.gz", "held.csv.bz2", "held.csv.xz",
+                                  "held.zip", "held.parquet"])
 def test_cutoff_reads_standard_input_as_the_file(files, capsys, monkeypatch, name):
     root, _ = files
     code, from_file, err = _cutoff(capsys, root / "held.csv")
