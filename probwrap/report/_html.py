@@ -112,7 +112,8 @@ def _calibration_section(c: ReportContent, figures: dict[str, str]) -> str:
 
 
 def _exact_range_words(c: ReportContent) -> str:
-    """Below 100 rows of equal weight: the cutoffs no one-sided exact binomial test sets apart
+    """Below 100 rows (rows of unequal weight counted by Kish's effective number, see
+    docs/decisions.md): the cutoffs no one-sided exact binomial test sets apart
     (``CutoffInterval.exact_low`` / ``exact_high``), beside the bootstrap interval that covers
     less often than it says there; "" where the interval has no such range."""
     ci = c.cost_interval
