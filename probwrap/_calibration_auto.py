@@ -11,7 +11,7 @@ import numpy as np
 from sklearn.model_selection import StratifiedKFold
 from sklearn.utils import check_random_state
 
-from ._calibration_shares import class_shares_losses, smoothed_class_shares
+from ._calibration_shares import ABSENT_CLASS_NOTE, class_shares_losses, smoothed_class_shares
 from ._heldout import HeldOutPredictions, keep_cells_together
 from ._validation import plain
 from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
@@ -541,12 +541,13 @@ class _AutoChoice:
                 UserWarning,
                 stacklevel=3,
             )
-        if losses:
+        if losses and binary:
             # the class shares, scored on the same folds (a reference, see CLASS_SHARES)
-            losses[CLASS_SHARES] = (
-                self._class_shares_losses(y, w, fold_masks) if binary
-                else class_shares_losses(y, w, fold_masks, scores.shape[1])
-            )
+            losses[CLASS_SHARES] = self._class_shares_losses(y, w, fold_masks)
+        elif losses and present.shape[0] == scores.shape[1]:
+            losses[CLASS_SHARES] = class_shares_losses(y, w, fold_masks, scores.shape[1])
+        elif losses:
+            notes[CLASS_SHARES] = ABSENT_CLASS_NOTE
         wn = w / w.sum()
         # Kish's effective sample size: the standard error does not depend on the weights' scale
         n_eff = float(w.sum() ** 2 / (w @ w))

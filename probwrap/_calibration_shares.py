@@ -25,6 +25,15 @@ from .calibration._vector_scaling import VectorScalingMap
 
 __all__: list[str] = []
 
+#: ``method_notes_["class_shares"]`` when a class has no held-out rows (of weight > 0): the
+#: class shares are then not scored. The rows say nothing about that class, and a class share
+#: of about ``1 / N`` would replace the model's own probability for it, which the maps keep
+#: (docs/calibration.md, "Multiclass").
+ABSENT_CLASS_NOTE = (
+    "not scored: a class has no held-out rows, so the class shares would say nothing about it "
+    "(the maps keep the model's own probability for such a class)"
+)
+
 
 def smoothed_class_shares(y: np.ndarray, w: np.ndarray, k: int) -> np.ndarray:
     """The ``k`` class shares of rows ``y`` (class indices) with count-scale weights ``w``:

@@ -285,7 +285,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         beside the refit's (docs/calibration.md); ``method_notes_["class_shares"]`` says when
         the class shares beat every candidate map beyond a standard error: ``"chosen: ..."``
         (frozen model) or ``"not used: ..."`` (cross-fitted: the refitted model predicts
-        through the map chosen, with a warning).
+        through the map chosen, with a warning), or ``"not scored: ..."`` (more than two
+        classes, one of them without held-out rows).
     clip_ : float
         The ``clip`` in use (chosen from the held-out probabilities when ``clip=None``).
     response_ : str

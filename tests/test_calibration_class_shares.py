@@ -221,3 +221,17 @@ def test_multiclass_cross_fitted_fold_models_that_rank_nothing_warn_and_keep_the
     assert all(v[0] > loss_c for nm, v in cw.method_scores_.items() if nm != "class_shares")
     proba = cw.predict_proba(X[:50])
     assert np.ptp(proba, axis=0).max() > 0.05  # not the class shares: rows differ
+
+
+def test_multiclass_class_shares_not_scored_when_a_class_has_no_rows():
+    # the Womenlf model above, calibrated on its rows without the "parttime" class: the rows
+    # say nothing about that class, so the class shares (about 1/N for it) are not scored and
+    # the maps keep the model's own probability for it
+    model, Xc, yc, Xt, _ = _womenlf_shuffled_neighbour()
+    keep = yc != "parttime"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        cw = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc[keep], yc[keep])
+    assert cw.method_ != "class_shares"
+    assert "class_shares" not in cw.method_scores_
+    assert cw.method_notes_["class_shares"].startswith("not scored: a class has no held-out rows")
