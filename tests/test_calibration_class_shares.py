@@ -173,7 +173,6 @@ def test_multiclass_useless_model_gets_the_class_shares(monkeypatch):
         before = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc, yc)
     assert before.method_ == "temperature"
     old = log_loss(yt, before.predict_proba(Xt), labels=cw.classes_)
-    assert old == pytest.approx(1.1225, abs=5e-4)
     assert old > 1.10 * sk and old > 1.15 * ours
 
 
