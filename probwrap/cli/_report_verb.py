@@ -130,6 +130,11 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         "outcomes that arrive as k of n (a success row and a failure row per "
                         "group, weighted by --weight-column): every bootstrap interval then "
                         "resamples whole groups, and the page gives the groups' dispersion")
+    parser.add_argument("--unlabelled-cell-column", metavar="C",
+                        help="column of --unlabelled naming the unit each unlabelled row "
+                        "belongs to (a district, a route and week): the prevalence estimate, "
+                        "its interval and shift test, and the batches count each unit once, "
+                        "its rows worth their number over the units' design effect")
     add_alarm_flags(parser)
     add_guarantee_flags(parser)
     add_late_label_flags(parser)
@@ -231,8 +236,11 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         y = _class_labels(frame, args, columns)
         given = read_weights(frame, args.weight_column, args.scores, "report")
         q = None
+        unlabelled_cells: dict = {}
         if args.unlabelled is not None:
-            q = probabilities(args.unlabelled, read_table(args.unlabelled, exact=columns))
+            uframe = read_table(args.unlabelled, exact=columns, text=_unlabelled_text(args))
+            q = probabilities(args.unlabelled, uframe)
+            _unlabelled_cells(args, uframe, unlabelled_cells)
         check_row_count("report", P.shape[0], args.scores, "labelled rows")
         # rows of weight 0 are not judged
         _check_class_rows(y if given is None else y[given > 0], columns, args.scores)
@@ -244,6 +252,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
                     f"{q.shape[0]} rows, so there is one batch: the prevalence alarm needs a "
                     "series of batches and cannot judge a drift from one"))
         extra = {} if given is None else {"sample_weight": given}
+        extra.update(unlabelled_cells)
         if args.group_column is not None:
             extra["groups"] = _group_labels(frame, args.group_column, args.scores)
         if args.cell_column is not None:
@@ -349,6 +358,20 @@ def _text_columns(args: argparse.Namespace) -> list[str]:
     return [c for c in (args.group_column, getattr(args, "cell_column", None)) if c is not None]
 
 
+def _unlabelled_text(args: argparse.Namespace) -> list[str]:
+    """The --unlabelled-cell-column, read as the text it holds (as --cell-column is)."""
+    column = getattr(args, "unlabelled_cell_column", None)
+    return [] if column is None else [column]
+
+
+def _unlabelled_cells(args: argparse.Namespace, uframe: Any, extra: dict) -> None:
+    """With --unlabelled-cell-column: the unlabelled rows' cells as ``unlabelled_cells``."""
+    if getattr(args, "unlabelled_cell_column", None) is not None:
+        extra["unlabelled_cells"] = _group_labels(uframe, args.unlabelled_cell_column,
+                                                  args.unlabelled,
+                                                  flag="--unlabelled-cell-column")
+
+
 def _group_labels(frame, column: str, path: str, flag: str = "--group-column") -> np.ndarray:
     """The --group-column (or ``flag``) as text labels, exactly as written (read with
     :func:`_text_columns`); an empty cell is refused (never silently dropped)."""
@@ -386,8 +409,11 @@ def _made_from(args: argparse.Namespace) -> str:
     text = f"{args.scores} ({', '.join(read)})"
     if args.unlabelled is not None:
         column = args.unlabelled_score_column or args.score_column
+        cells = getattr(args, "unlabelled_cell_column", None)
+        inner = [f"scores {col(column)}"] if column is not None else []
+        inner += [f"cells {col(cells)}"] if cells is not None else []
         text += (f"; unlabelled rows from {args.unlabelled}"
-                 + (f" (scores {col(column)})" if column is not None else ""))
+                 + (f" ({', '.join(inner)})" if inner else ""))
     return text
 
 
@@ -467,16 +493,26 @@ def group_summary(content: Any, summary: dict) -> str:
 
 def cell_summary(content: Any, summary: dict) -> str:
     """With --cell-column: what the intervals resampled (``resampled``: the unit, the number of
-    cells and their Pearson dispersion, null where not computed), and its words in the line."""
+    cells and their Pearson dispersion, null where not computed), and its words in the line;
+    with --unlabelled-cell-column: the unlabelled cells and the rows they are worth
+    (``unlabelled_cells``)."""
+    words = ""
+    if getattr(content, "unlabelled_cells", None) is not None:
+        # --unlabelled-cell-column: the units of the unlabelled side and their worth in rows
+        summary["unlabelled_cells"] = {
+            "n_cells": int(content.unlabelled_cells),
+            "effective_rows": float(content.unlabelled_effective_rows)}
+        words = (f"; {content.n_unlabelled} unlabelled rows in {content.unlabelled_cells} cells "
+                 f"(worth {content.unlabelled_effective_rows:.4g} rows)")
     unit = getattr(content, "resampling", None)
     if unit is None or unit.kind != "cells":
-        return ""
+        return words
     summary["resampled"] = {"unit": "cells", "n_cells": int(unit.n_cells),
                             "dispersion": unit.dispersion}
-    words = f"; intervals resample {unit.n_cells} cells"
+    cells = f"; intervals resample {unit.n_cells} cells"
     if unit.dispersion is not None:
-        words += f" (dispersion {unit.dispersion:.3g})"
-    return words
+        cells += f" (dispersion {unit.dispersion:.3g})"
+    return cells + words
 
 
 def _print_summary(args: argparse.Namespace, line: str, summary: dict) -> None:
@@ -495,6 +531,9 @@ def _handler(args: argparse.Namespace) -> int:
         parser.error("give either --score-column (binary) or --class-columns (one per class)")
     if args.unlabelled_score_column is not None and args.unlabelled is None:
         parser.error("--unlabelled-score-column needs --unlabelled (the file it names a "
+                     "column of)")
+    if args.unlabelled_cell_column is not None and args.unlabelled is None:
+        parser.error("--unlabelled-cell-column needs --unlabelled (the file it names a "
                      "column of)")
     alarm_settings(args, parser, batched=args.batch_size is not None,
                    batches="--batch-size (with --unlabelled)")
@@ -549,12 +588,14 @@ def _handler(args: argparse.Namespace) -> int:
             raise DataError(f"{args.scores}: both outcomes are needed (rows with and without "
                             "the event)")
         q = None
+        extra_cells: dict = {}
         if args.unlabelled is not None:
             column = args.unlabelled_score_column or args.score_column
-            uframe = read_table(args.unlabelled, exact=[column])
+            uframe = read_table(args.unlabelled, exact=[column], text=_unlabelled_text(args))
             q = read_scores(uframe, column, args.unlabelled, scale=args.scale,
                             flag="--unlabelled-score-column" if args.unlabelled_score_column
                             else "--score-column")
+            _unlabelled_cells(args, uframe, extra_cells)
         check_row_count("report", p.shape[0], args.scores, "labelled rows")
         if q is not None:
             check_row_count("report", q.shape[0], args.unlabelled, "unlabelled rows")
@@ -572,6 +613,7 @@ def _handler(args: argparse.Namespace) -> int:
         if [str(v) for v in labels] != ["0", "1"]:  # say on the page which class is positive
             args.title = f"{args.title} (positive class: {labels[1]})"
         extra: dict = {"guarantee": guarantee, **extra_scale}
+        extra.update(extra_cells)
         if args.group_column is not None:
             extra["groups"] = _group_labels(frame, args.group_column, args.scores)
         if args.cell_column is not None:

@@ -82,6 +82,7 @@ def write_report(
     cells: Any = None,
     score_scale: str = "proba",
     source: str | None = None,
+    unlabelled_cells: Any = None,
 ) -> ReportContent | MulticlassReportContent:
     """Write a self-contained HTML report and return the numbers it shows.
 
@@ -229,6 +230,20 @@ def write_report(
         1). In ``content.resampling``. The report's own prevalence (class shares) estimate
         fits its :class:`~probwrap.shift.PriorEstimator` with the same cells, so its shift test
         and interval count the labelled cells as units (``content.prevalence_cells``).
+    unlabelled_cells : array-like of shape (m,), optional
+        The cell of every unlabelled row (``unlabelled_prob``, or ``X_unlabelled`` with
+        ``model``): rows of one sampled unit (the pupils of one district, the parcels of one
+        route and week) share causes, so they are not independent. The report's own prevalence
+        (class shares) estimate then counts each cell as a unit on the unlabelled side, as
+        :meth:`probwrap.shift.PriorEstimator.estimate` does with ``cells``: the shift test's and
+        the interval's variance is clustered on the cells, and the rows are worth their count
+        over the cells' design effect on the mean score (``content.unlabelled_cells``,
+        ``content.unlabelled_effective_rows``); the batches (``batch_size``) count each batch's
+        cells the same way (:func:`probwrap.shift.prior_by_batch`, ``n_effective``), and so does
+        the prevalence alarm. With a fitted and adapted ``prior_shift`` the prevalence is the
+        wrapper's own (give the cells to its ``adapt``); the cells then go to its ``monitor``
+        for the batches only, and without batches they are refused. Default: every unlabelled
+        row its own unit, as before.
     score_scale : {"proba", "log-odds"}, default="proba"
         What ``y_prob`` and ``unlabelled_prob`` hold (binary reports with ``y_true``/``y_prob``):
         probabilities, or log-odds (any finite number, e.g. ``decision_function`` values). The
@@ -278,7 +293,7 @@ def write_report(
         guarantee=guarantee, horizon_labels=horizon_labels, time=time, event=event,
         horizon=horizon, alarm_reference=alarm_reference,
         alarm_decision_interval=alarm_decision_interval, cells=cells, score_scale=score_scale,
-        source=source,
+        source=source, unlabelled_cells=unlabelled_cells,
     )
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)

@@ -350,21 +350,103 @@ def unit_words(unit: ResamplingUnit | None) -> str:
     return words
 
 
+def unlabelled_cell_units(estimator: Any, q: np.ndarray, unlabelled_cells: Any,
+                          name: str = "unlabelled_cells") -> tuple[np.ndarray, int, float]:
+    """The unlabelled rows' cells for the report's own estimate: ``(codes, cells, rows)``.
+
+    ``codes`` are the cells as ``0 .. G - 1`` (:func:`probwrap.shift._cells.check_cells`, a
+    clear error naming ``name``); ``cells`` the number of cells; ``rows`` the rows' evidence as
+    :meth:`~probwrap.shift.PriorEstimator.estimate` weighs it with those cells: the rows (no
+    weights: Kish's count is the number of rows) divided by the cells' design effect on the
+    mean score (:func:`probwrap.shift._cells.cell_design_rows`), the count that
+    :func:`~probwrap.shift.prior_by_batch` gives a batch as ``n_effective``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift import PriorEstimator
+    >>> rng = np.random.default_rng(0)
+    >>> p = rng.uniform(0.05, 0.95, 400)
+    >>> est = PriorEstimator(n_resamples=0).fit(np.column_stack([1 - p, p]),
+    ...                                         (rng.uniform(size=400) < p).astype(int))
+    >>> q = np.repeat(rng.uniform(0.05, 0.95, 50), 4)     # 50 cells of 4 alike rows
+    >>> codes, cells, rows = unlabelled_cell_units(est, np.column_stack([1 - q, q]),
+    ...                                            np.repeat(np.arange(50), 4))
+    >>> cells, round(rows, 6)
+    (50, 50.0)
+    """
+    from ..shift._cells import cell_design_rows, check_cells
+    from ..shift._shift_tests import _score_rows
+
+    codes = check_cells(unlabelled_cells, q.shape[0], name)
+    n_cells = int(np.unique(codes).shape[0])
+    if n_cells < 2:
+        raise ValueError(f"`{name}` holds one cell for every unlabelled row; the unlabelled "
+                         "side's variance clustered on cells needs at least two cells.")
+    rows = cell_design_rows(_score_rows(estimator.calibrate(q), estimator.source_prior_),
+                            np.ones(q.shape[0]), codes, float(q.shape[0]))
+    return codes, n_cells, float(rows)
+
+
+def unlabelled_cells_use(unlabelled_cells: Any, prior_shift: Any, q: Any, X_unlabelled: Any,
+                         batch_size: Any) -> Any:
+    """Check ``unlabelled_cells`` before the prevalence section reads them; returns the cells to
+    pass to ``prior_shift.monitor`` (None otherwise).
+
+    The report's own estimate (``unlabelled_prob``, or ``X_unlabelled`` with ``model``) takes
+    them (:func:`unlabelled_cell_units`). A fitted and adapted ``prior_shift`` brings its own
+    prevalence, interval and shift test, so the cells are read only for its batches
+    (``X_unlabelled`` with ``batch_size``); anywhere else they would change nothing, which is
+    refused with a clear error rather than passed over.
+    """
+    if unlabelled_cells is None:
+        return None
+    if prior_shift is not None and hasattr(prior_shift, "target_prior_"):
+        if X_unlabelled is None or batch_size is None:
+            raise ValueError(
+                "`unlabelled_cells` with a fitted and adapted `prior_shift`: the prevalence, its "
+                "interval and shift test are the wrapper's own, so give the cells to its "
+                "`adapt(X, cells=...)`; the report reads `unlabelled_cells` only for the "
+                "batches of `X_unlabelled` (with `batch_size`), through `prior_shift.monitor`."
+            )
+        from sklearn.utils.validation import _num_samples
+
+        from ..shift._cells import check_cells
+
+        check_cells(unlabelled_cells, _num_samples(X_unlabelled), "unlabelled_cells")
+        return unlabelled_cells
+    if q is None:
+        raise ValueError("`unlabelled_cells` gives the cell of every unlabelled row; give the "
+                         "rows too (`unlabelled_prob`, or `X_unlabelled` with `model`).")
+    return None
+
+
 def prevalence_unit_words(content: Any) -> str:
     """What the prevalence (class shares) interval and shift test counted as units, in words
     for the page (plain text): the labelled cells, or the labelled rows as independent where
     the report's own bootstrap resampled cells (a ``prior_shift`` fitted without ``cells``);
-    empty where both counted rows."""
+    and the unlabelled cells (``unlabelled_cells``) with the rows they are worth, or the
+    unlabelled rows as independent; empty where both sides counted rows."""
     n = getattr(content, "prevalence_cells", None)
+    g = getattr(content, "unlabelled_cells", None)
+    if g is not None:
+        unlabelled = (f"the {content.n_unlabelled} unlabelled rows' {g} cells are the units of "
+                      f"the unlabelled side, worth {content.unlabelled_effective_rows:.4g} "
+                      "independent rows (their count over the cells' design effect on the mean "
+                      "score).")
+    else:
+        unlabelled = "the unlabelled rows count as independent rows."
     if n is not None:
         return (f"The interval and the shift test count the labelled rows' {n} cells as the "
                 "units of the labelled side (the rows of a cell are not independent), as the "
-                "bootstrap intervals do; the unlabelled rows count as independent rows.")
+                f"bootstrap intervals do; {unlabelled}")
     unit = getattr(content, "resampling", None)
     if unit is not None and unit.groups is not None:
         return ("The interval and the shift test come from the given prior-shift wrapper, "
                 "fitted without cells: they count the labelled rows as independent, so they "
                 "are too narrow if the rows of a cell share causes (pass the cells to its fit).")
+    if g is not None:
+        return f"The labelled rows count as independent rows; {unlabelled}"
     return ""
 
 

@@ -48,7 +48,7 @@ from ._binary_rules import (
     rule_row,
     target_columns,
 )
-from ._cells import frequency_cases, resampling_unit
+from ._cells import frequency_cases, resampling_unit, unlabelled_cell_units, unlabelled_cells_use
 from ._common import (
     MetricRow,
     NoteLog,
@@ -137,6 +137,11 @@ class ReportContent:
     #: the labelled cells the prevalence interval and shift test counted as units (None: the
     #: labelled rows were counted as independent); see :func:`._cells.prevalence_unit_words`
     prevalence_cells: int | None = None
+    #: ``unlabelled_cells``: the unlabelled rows' cells the report's own estimate counted as
+    #: units, and the independent rows they are worth (the rows over the cells' design effect
+    #: on the mean score); None without them or with ``prior_shift`` (its own numbers)
+    unlabelled_cells: int | None = None
+    unlabelled_effective_rows: float | None = None
     #: where the rows came from (a file and its columns), shown under the title
     source: str | None = None
 
@@ -260,6 +265,7 @@ def collect_content(
     alarm_decision_interval: float | None = None,
     cells: Any = None,
     score_scale: str = "proba",
+    unlabelled_cells: Any = None,
 ) -> Any:
     """Compute the report's numbers; see :func:`probwrap.report.write_report`.
 
@@ -331,7 +337,7 @@ def collect_content(
         batch_size=batch_size, n_bins=n_bins, n_resamples=n_resamples,
         confidence_level=confidence_level, rng=rng, title=title, policy=policy, calib=calib,
         class_names=class_names, progress=progress, groups=groups, cells=cells,
-        alarm_settings=alarm_settings,
+        alarm_settings=alarm_settings, unlabelled_cells=unlabelled_cells,
     )
     if general is not None:
         if guarantee is not None:
@@ -491,6 +497,8 @@ def collect_content(
     if unlabelled_prob is not None:
         q = as_positive_proba(unlabelled_prob, "unlabelled_prob")
         content.n_unlabelled = int(q.shape[0])
+    batch_cells = unlabelled_cells_use(unlabelled_cells, prior_shift, q, X_unlabelled,
+                                       batch_size)
     est = None
     if prior_shift is not None and hasattr(prior_shift, "target_prior_"):
         content.source_prevalence = float(prior_shift.source_prior_[1])
@@ -511,7 +519,7 @@ def collect_content(
             step("prevalence by batch", 3)
             content.batch_table = notes.compute(
                 "batches", "prevalence by batch", prior_shift.monitor, X_unlabelled,
-                batch_size=batch_size)
+                batch_size=batch_size, cells=batch_cells)
     elif q is not None:
         est = PriorEstimator(n_resamples=n_resamples, confidence_level=confidence_level,
                              random_state=int(rng.randint(2**31 - 1)))
@@ -519,8 +527,14 @@ def collect_content(
         # estimator's shift test and interval too, not rows counted as independent
         est.fit(np.column_stack([1.0 - p, p]), y01.astype(np.intp), w,
                 class_names=content.class_names, cells=unit.groups)
-        est_res = notes.compute("prevalence", "estimated prevalence", est.estimate,
-                                np.column_stack([1.0 - q, q]))
+        q2 = np.column_stack([1.0 - q, q])
+        ucodes = None
+        if unlabelled_cells is not None:
+            # the unlabelled rows' cells are the units of their side (estimate(cells=))
+            ucodes, content.unlabelled_cells, content.unlabelled_effective_rows = (
+                unlabelled_cell_units(est, q2, unlabelled_cells))
+        est_res = notes.compute("prevalence", "estimated prevalence", est.estimate, q2,
+                                cells=ucodes)
         content.prevalence_cells = est.n_source_cells_
         content.source_prevalence = float(est.source_prior_[1])
         content.target_prevalence = float(est_res.prior[1])
@@ -535,8 +549,8 @@ def collect_content(
         if batch_size is not None:
             step("prevalence by batch", 3)
             content.batch_table = notes.compute(
-                "batches", "prevalence by batch", prior_by_batch, est,
-                np.column_stack([1.0 - q, q]), batch_size=batch_size)
+                "batches", "prevalence by batch", prior_by_batch, est, q2,
+                batch_size=batch_size, cells=ucodes)
     if content.batch_table is not None and content.source_prevalence is not None:
         from ._alarm_chart import batch_alarm
 

@@ -25,7 +25,7 @@ from ..metrics import (
 )
 from ..plot._common import class_proba
 from ..shift import PriorEstimator, prior_by_batch
-from ._cells import resampling_unit
+from ._cells import resampling_unit, unlabelled_cell_units, unlabelled_cells_use
 from ._common import (
     MetricRow,
     NoteLog,
@@ -102,6 +102,10 @@ class MulticlassReportContent:
     #: the labelled cells the class shares' intervals and shift test counted as units (None:
     #: rows; see ``ReportContent.prevalence_cells``)
     prevalence_cells: int | None = None
+    #: the unlabelled rows' cells and the independent rows they are worth (see
+    #: ``ReportContent.unlabelled_cells``)
+    unlabelled_cells: int | None = None
+    unlabelled_effective_rows: float | None = None
     #: class shares batch by batch (:func:`probwrap.shift.prior_by_batch` or
     #: ``PriorShiftWrapper.monitor``), and one prevalence alarm per class
     #: (:class:`~probwrap.report._alarm_chart.BatchAlarm`; two classes: the second only)
@@ -197,6 +201,7 @@ def collect_general_content(
     from_model: bool = False,
     batch_size: int | None = None,
     alarm_settings: dict[str, float] | None = None,
+    unlabelled_cells: Any = None,
 ) -> MulticlassReportContent:
     """The numbers of a multiclass and/or multi-action report (see ``write_report``)."""
     n, k = proba.shape
@@ -287,6 +292,8 @@ def collect_general_content(
     fitted = None
     if q is not None:
         content.n_unlabelled = int(q.shape[0])
+    batch_cells = unlabelled_cells_use(unlabelled_cells, prior_shift, q, X_unlabelled,
+                                       batch_size)
     if prior_shift is not None and hasattr(prior_shift, "target_prior_"):
         content.source_prior = np.asarray(prior_shift.source_prior_, dtype=float)
         content.target_prior = np.asarray(prior_shift.target_prior_, dtype=float)
@@ -305,14 +312,20 @@ def collect_general_content(
             step("class shares by batch", 3)
             content.batch_table = notes.compute(
                 "batches", "class shares by batch", prior_shift.monitor, X_unlabelled,
-                batch_size=batch_size)
+                batch_size=batch_size, cells=batch_cells)
             fitted = getattr(prior_shift, "prior_estimator_", None)
     elif q is not None:
         est = PriorEstimator(n_resamples=n_resamples, confidence_level=confidence_level,
                              random_state=int(rng.randint(2**31 - 1)))
         # the labelled rows' cells are the estimator's units too (see the binary report)
         est.fit(proba, y_index, w, class_names=content.class_names, cells=unit.groups)
-        res = notes.compute("prevalence", "estimated class shares", est.estimate, q)
+        ucodes = None
+        if unlabelled_cells is not None:
+            # the unlabelled rows' cells are the units of their side (estimate(cells=))
+            ucodes, content.unlabelled_cells, content.unlabelled_effective_rows = (
+                unlabelled_cell_units(est, q, unlabelled_cells))
+        res = notes.compute("prevalence", "estimated class shares", est.estimate, q,
+                            cells=ucodes)
         content.prevalence_cells = est.n_source_cells_
         content.source_prior = np.asarray(est.source_prior_, dtype=float)
         content.target_prior = np.asarray(res.prior, dtype=float)
@@ -325,7 +338,7 @@ def collect_general_content(
             step("class shares by batch", 3)
             content.batch_table = notes.compute(
                 "batches", "class shares by batch", prior_by_batch, est, q,
-                batch_size=batch_size)
+                batch_size=batch_size, cells=ucodes)
             fitted = est
     if content.batch_table is not None and content.source_prior is not None:
         _class_alarms(content, fitted, notes, alarm_settings or {})
@@ -374,7 +387,7 @@ def general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_cos
                     action_names, unlabelled_prob, X_unlabelled, prior_shift, batch_size,
                     n_bins, n_resamples, confidence_level, rng, title, policy, calib,
                     class_names, progress, groups=None, cells=None,
-                    alarm_settings=None) -> Any:
+                    alarm_settings=None, unlabelled_cells=None) -> Any:
     """The multiclass / multi-action content, or None when the binary report applies."""
 
     if model is not None:
@@ -437,5 +450,5 @@ def general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_cos
         prior_shift=prior_shift, n_bins=n_bins, n_resamples=n_resamples,
         confidence_level=confidence_level, rng=rng, title=title, progress=progress,
         groups=groups, cells=cells, from_model=model is not None, batch_size=batch_size,
-        alarm_settings=alarm_settings,
+        alarm_settings=alarm_settings, unlabelled_cells=unlabelled_cells,
     )
