@@ -34,7 +34,7 @@ from sklearn.utils.metadata_routing import MetadataRouter, MethodMapping, proces
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import column_or_1d, has_fit_parameter
 
-from ._predictions import HeldOutPredictions, check_model_probabilities
+from ._predictions import HeldOutPredictions, check_model_probabilities, rows_summing_to_one
 from ._predictions import resolve_response as _resolve_response
 from ._validation import (
     check_labels,
@@ -155,6 +155,7 @@ def _fit_predict_fold(
     # (a class absent from the training rows is reported once by the caller, for every fold)
     model = clone(estimator).fit(_safe_indexing(X, train), y[train], **fold_params)
     out = np.asarray(getattr(model, response)(_safe_indexing(X, test)), dtype=float)
+    out = rows_summing_to_one(out, response, f"A fold model ({type(model).__name__})")
     return np.asarray(model.classes_), out, (model if keep else None)
 
 
@@ -795,7 +796,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                 f"The wrapped estimator returned NaN or infinite values from {response} for `X`."
             )
         check_model_probabilities(out, response, "The wrapped estimator", "`X`")
-        return out
+        return rows_summing_to_one(out, response,
+                                   f"The wrapped estimator ({type(self.estimator_).__name__})")
 
     # -- scikit-learn protocol ---------------------------------------------------------------
     def get_metadata_routing(self) -> MetadataRouter:

@@ -977,10 +977,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if not models or getattr(self.prior_estimator_, "_src_fold", None) is None:
             return None
         from ._heldout import fold_columns
+        from ._predictions import rows_summing_to_one
 
-        return [_rounded_to_one(fold_columns(
-            np.asarray(classes), np.asarray(model.predict_proba(X), dtype=float), self.classes_,
-            "predict_proba")) for model, classes in models]
+        return [fold_columns(np.asarray(classes), rows_summing_to_one(
+            np.asarray(model.predict_proba(X), dtype=float), "predict_proba",
+            f"A fold model ({type(model).__name__})"), self.classes_, "predict_proba")
+            for model, classes in models]
 
     def _fold_scorer(self) -> Any:
         """The refit model and its fold models, to score Dask or Spark rows where they live
