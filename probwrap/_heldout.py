@@ -520,6 +520,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             # the labels wait as one-byte (or two-byte) codes while the model predicts
             y_index = y_index.astype(np.min_scalar_type(est_classes.shape[0] - 1))
             values = _predict_in_chunks(getattr(estimator, response), X)
+            values = rows_summing_to_one(values, response,
+                                         f"The frozen model ({type(estimator).__name__})")
             # every row is in no fold: a read-only view of one value, not n of them
             fold = np.broadcast_to(np.array(-1, dtype=int), (n,))
             n_folds = 0

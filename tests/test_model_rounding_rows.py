@@ -77,3 +77,18 @@ def test_prior_shift_wrapper_reads_such_rows(email):
             warnings.simplefilter("ignore")
             wrapper.fit(Xtr, ytr)
             assert wrapper.predict(Xte).shape == yte.shape
+
+
+def test_a_frozen_model_with_such_rows(email):
+    # a model fitted elsewhere (FrozenEstimator): its probabilities on the labelled rows are
+    # what the wrapper fits on; rows off by rounding stopped fit before
+    from sklearn.frozen import FrozenEstimator
+
+    Xtr, ytr, Xte, yte = email
+    model = FrozenEstimator(GaussianNB().fit(Xtr, ytr))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        psw = PriorShiftWrapper(model, random_state=0).fit(Xte, yte)
+        P = psw.predict_proba(Xte)
+    assert any("The frozen model" in str(w.message) for w in caught)
+    np.testing.assert_allclose(P.sum(axis=1), 1.0, atol=1e-12)
