@@ -249,3 +249,32 @@ def test_command_line_unlabelled_cell_column_needs_its_file(tmp_path, star98, ca
               "--label-column", "label", "--unlabelled-cell-column", "district", "--out",
               str(tmp_path / "r.html")])
     assert "--unlabelled-cell-column needs --unlabelled" in capsys.readouterr().err
+
+
+def test_command_line_class_columns_take_unlabelled_cells(tmp_path, capsys,
+                                                          _no_progress_lines):
+    import json
+
+    import pandas as pd
+
+    from probwrap.cli import main
+
+    rng = np.random.default_rng(3)
+    proba = rng.dirichlet([2, 2, 2], size=600)
+    y = (rng.random(600)[:, None] > np.cumsum(proba, axis=1)).sum(axis=1)
+    ucell = np.repeat(np.arange(40), 10)
+    q = rng.dirichlet([2, 2, 2], size=40)[ucell]
+    cols = ["a", "b", "c"]
+    pd.DataFrame(proba, columns=cols).assign(label=y).to_csv(tmp_path / "l.csv", index=False)
+    pd.DataFrame(q, columns=cols).assign(route=[f"r{c}" for c in ucell]).to_csv(
+        tmp_path / "u.csv", index=False)
+    code = main(["report", "--scores", str(tmp_path / "l.csv"), "--class-columns", "a,b,c",
+                 "--label-column", "label", "--unlabelled", str(tmp_path / "u.csv"),
+                 "--unlabelled-cell-column", "route", "--resamples", "30", "--out",
+                 str(tmp_path / "r.html"), "--format", "json"])
+    assert code == 0
+    out = json.loads(capsys.readouterr().out)
+    # ten alike rows a route: the 400 rows are worth the 40 routes
+    assert out["unlabelled_cells"]["n_cells"] == 40
+    assert out["unlabelled_cells"]["effective_rows"] == pytest.approx(40.0, rel=1e-9)
+    assert "40 cells are the units of the unlabelled side" in (tmp_path / "r.html").read_text()
