@@ -29,25 +29,6 @@ from .shift._shift_tests import evidence_cutoff
 #: Fewer labelled rows of a class than this makes ``fit`` warn (see ``_warn_few_class_rows``).
 MIN_CLASS_ROWS = 5
 
-#: Rows of the wrapped model's ``predict_proba`` whose sum is off 1 by at most this much are
-#: divided by their sum (rounding: scikit-learn's GaussianNB in a pipeline returned rows summing
-#: to 1 + 1.2e-6 on openintro's email data, beyond the 1e-6 that ``check_proba`` allows); rows
-#: farther off are refused as before.
-ROW_SUM_ROUNDING = 1e-4
-
-
-def _rounded_to_one(proba: np.ndarray) -> np.ndarray:
-    """``proba`` (n, k) with rows that miss a sum of 1 by rounding only divided by their sum
-    (a new array; unchanged when every row is within 1e-6 or some row is farther off than
-    ``ROW_SUM_ROUNDING``, which ``check_proba`` then refuses, naming the row)."""
-    if proba.ndim != 2 or proba.shape[0] == 0 or not np.all(np.isfinite(proba)):
-        return proba
-    sums = proba.sum(axis=1)
-    off = float(np.max(np.abs(sums - 1.0)))
-    if off <= 1e-6 or off > ROW_SUM_ROUNDING or float(proba.min()) < 0.0:
-        return proba
-    return proba / sums[:, None]
-
 __all__ = ["PriorShiftWrapper"]
 
 
@@ -546,7 +527,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         rows = _tally_rows(self.tally_) if ho.from_tally else None
         refit = (not ho.from_tally and ho.n_folds >= 2
                  and getattr(self, "_fold_models", None) is not None)
-        est.fit(_rounded_to_one(np.asarray(ho.values, dtype=float)), ho.y_index,
+        est.fit(ho.values, ho.y_index,
                 ho.sample_weight, effective_rows=rows,
                 class_names=self.classes_, source_fold=ho.fold if refit else None,
                 cells=_count_cells(cells, ho),
@@ -958,12 +939,6 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             UserWarning,
             stacklevel=3,
         )
-
-    def _inner_output(self, X: Any, response: str) -> np.ndarray:
-        """The wrapped model's output; ``predict_proba`` rows off a sum of 1 by rounding only
-        (at most ``ROW_SUM_ROUNDING``) divided by their sum (:func:`_rounded_to_one`)."""
-        out = super()._inner_output(X, response)
-        return _rounded_to_one(out) if response == "predict_proba" else out
 
     def _fold_proba(self, X: Any) -> list[np.ndarray] | None:
         """``X`` scored by each fold model of the cross-fitting, in ``classes_`` columns, when
