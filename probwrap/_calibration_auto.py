@@ -620,8 +620,8 @@ class _AutoChoice:
         """True (and noted) when the one-standard-error rule passes over temperature scaling:
         see ``_PASS_OVER_TEMPERATURE_BELOW_SHARES``. ``scores`` are the binary held-out
         log-odds, ``y`` the class indices and ``w`` the weights of the rows ``auto`` scored."""
-        if not (_PASS_OVER_TEMPERATURE_BELOW_SHARES and CLASS_SHARES in means
-                and means["temperature"] > means[CLASS_SHARES]):
+        if not (_PASS_OVER_TEMPERATURE_BELOW_SHARES and scores.ndim == 1
+                and CLASS_SHARES in means and means["temperature"] > means[CLASS_SHARES]):
             return False
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")

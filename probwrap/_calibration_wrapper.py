@@ -279,7 +279,10 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         classes the scores separate), why it could not be scored (the error of a failed fold
         fit), which warnings its fold fits raised, or why the chosen map was chosen without
         cross-validation; ``method_notes_["auto"]`` says when the candidates were scored on a
-        sample of the rows (above 20,000 held-out rows); ``method_notes_["temperature"]`` /
+        sample of the rows (above 20,000 held-out rows); ``method_notes_["temperature"]`` says
+        when the one-standard-error rule passed over a softening temperature that scored above
+        the class shares (two classes; docs/small_data.md, twenty-second session);
+        ``method_notes_["temperature"]`` /
         ``["vector_scaling"]`` say when a sharpening temperature was capped at 1 or vector
         scaling replaced by temperature scaling, the fold models' scores being near-constant
         beside the refit's (docs/calibration.md); ``method_notes_["class_shares"]`` says when
