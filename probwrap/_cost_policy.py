@@ -95,7 +95,8 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         ``cost_curve_.cutoff``). With at most 20,000 held-out rows in memory, that plug-in
         cutoff is first carried back through a calibration map chosen on the held-out rows
         (the model's own probabilities unless a map fits them better by more than a standard
-        error; ``cutoff_anchor_``); otherwise per-class offsets on the log-probability scale fitted
+        error, or, on at most 300 held-out rows with at least 10 of each class, unless Platt
+        scaling fits them better at all; ``cutoff_anchor_``); otherwise per-class offsets on the log-probability scale fitted
         the same way. ``"fixed"``: use ``cutoff`` as given, so that a search can tune it.
     cutoff : float or array-like of shape (n_classes,), default=None
         With ``strategy="fixed"``: the probability cutoff (binary: the second action is taken when

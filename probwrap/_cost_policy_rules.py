@@ -84,7 +84,8 @@ CERTAIN_ROWS_SHARE = 0.1
 def recalibrated_plugin_cutoff(p, y, w, t0: float, random_state: Any) -> tuple[float, str | None]:
     """The plug-in cutoff ``t0`` carried back to the scale of the held-out probabilities ``p``
     through the map ``CalibrationWrapper(method="auto")`` chooses for them on the same rows (the
-    model's own probabilities among the candidates, first): the cutoff ``c`` with
+    model's own probabilities among the candidates, first; replaced by Platt scaling on small
+    sets where Platt scored better, :func:`_platt_over_identity`): the cutoff ``c`` with
     ``map(p) > t0`` exactly where ``p > c``. Returns ``(c, map name)``; ``(t0, None)`` above
     ``RECALIBRATED_ANCHOR_MAX_ROWS`` rows, when a map cannot be fitted, or when the fitted map
     is not non-decreasing (then no single cutoff on ``p`` reproduces it). ``random_state``
