@@ -287,7 +287,11 @@ def one(name, X, y, mname, seed, kinds, weighted, rows):
                 applied=float(np.asarray(psw.applied_prior_)[j]),
                 ll_none=ll0, ll_adapt=lla, ll_oracle=llo, r_none=lla / ll0,
                 gap=(ll0 - lla) / (ll0 - llo) if ll0 - llo > 1e-4 else np.nan,
-                gap_abs=ll0 - llo, warn_fit=",".join(fit_warn), warn=",".join(warn)))
+                gap_abs=ll0 - llo, pvalue=float(psw.shift_pvalue_),
+                weight=float(psw.adaptation_weight_), cutoff=float(psw.evidence_cutoff_),
+                harm_scale=float(psw.prior_estimate_.null_harm_scale or 0.0),
+                move_ratio=float(getattr(psw.prior_estimate_, "null_move_ratio", None) or 0.0),
+                stat=float(psw.shift_statistic_), warn_fit=",".join(fit_warn), warn=",".join(warn)))
             r = rows[-1]
             print(f"{name[:28]:28s} {mname:2s} {vname:8s} s{seed} {kd:5s} truth {r['truth']:.3f} "
                   f"est {r['est']:.4f} [{r['lo']:.3f},{r['hi']:.3f}] cov {str(cover)[0]} "

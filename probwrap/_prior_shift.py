@@ -29,6 +29,12 @@ from .shift._shift_tests import evidence_cutoff
 #: Fewer labelled rows of a class than this makes ``fit`` warn (see ``_warn_few_class_rows``).
 MIN_CLASS_ROWS = 5
 
+#: ``adapt`` warns (NoShiftHarmWarning) about a move made at a shift-test p-value at least this
+#: large that would cost more than 2 % had nothing moved: at 0.10 it fired on both quiet no-shift
+#: cells above 1.02 of benchmarks/shift_real_hunt22.py and on 15 of its 388 shifted cells (at
+#: 0.05: 38); docs/prior_shift.md, "One draw's harm when nothing moved".
+NO_SHIFT_HARM_PVALUE = 0.10
+
 __all__ = ["PriorShiftWrapper"]
 
 
@@ -165,7 +171,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         most ``max_harm`` (a limited-risk empirical-Bayes rule in the spirit of Efron & Morris
         1972). Strongly separating models or common classes keep ``c`` near 1; a weak model
         at a small prevalence, whose rows say little about the prior while every prediction
-        reacts to it, gets a high cutoff. None: ``c = min_evidence``.
+        reacts to it, gets a high cutoff. None: ``c = min_evidence``. The bound is on
+        average over draws: one draw whose class shares did not move can lose more (the move
+        follows the same noise that the log loss of those rows then charges, a term linear in
+        ``w``); where such a move is made on weak evidence (shift test p >= 0.10) and would cost
+        more than 2 %, ``adapt`` warns (:class:`~probwrap.shift.NoShiftHarmWarning`;
+        docs/prior_shift.md, "One draw's harm when nothing moved").
     interval : {"score", "bca", "percentile"}, default="score"
         How ``target_prior_interval_`` is built: ``"score"`` — the inverted two-sample score
         test (two classes), or for more classes with ``method="em"`` the class-moment
@@ -986,6 +997,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.shift_detected_ = bool(weight > 0)
         if not self._warn_uninformative(interval, getattr(res, "identified", True)):
             self._warn_imprecise(interval, getattr(res, "identified", True))
+        if self.known_prior_ is None:
+            self._warn_no_shift_harm(res, weight)
         src = self.source_prior_
         if self.known_prior_ is not None:
             self.applied_prior_ = self.known_prior_.copy()
@@ -1029,6 +1042,36 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 stacklevel=3,
             )
         return bool(wide.size)
+
+    def _warn_no_shift_harm(self, res: Any, weight: float) -> None:
+        """Warn when ``adapt`` moved the predictions on evidence a no-shift draw gives with
+        probability 10 % or more (``shift_pvalue_ >= NO_SHIFT_HARM_PVALUE``) and the move, had
+        the rows' class shares not changed, would raise their log loss by more than ``DRAW_HARM_LIMIT`` (2 %;
+        :func:`~probwrap.shift._shift_tests.draw_harm`). ``max_harm`` bounds that harm on
+        average over draws, not for each draw: on modeldata's ad_data (a logistic regression,
+        111 labelled and 109 unlabelled rows, nothing moved) 8 % of the draws lost more than
+        2 % (docs/prior_shift.md, "One draw's harm when nothing moved")."""
+        from .shift._shift_tests import DRAW_HARM_LIMIT, NoShiftHarmWarning, draw_harm
+
+        pvalue = getattr(res, "shift_pvalue", None)
+        if (weight <= 0 or pvalue is None or not np.isfinite(pvalue)
+                or pvalue < NO_SHIFT_HARM_PVALUE):
+            return
+        harm = draw_harm(getattr(res, "null_harm_scale", None),
+                         getattr(res, "null_move_ratio", None), res.shift_statistic, weight)
+        if harm <= DRAW_HARM_LIMIT:
+            return
+        warnings.warn(
+            f"adapt moved the predictions {weight:.0%} of the way to the estimate on evidence "
+            f"that a draw with no shift gives often (shift test p = {pvalue:.2g}); were the "
+            f"class shares of these rows in fact unchanged, the move would raise their log loss "
+            f"by about {harm:.1%} (max_harm bounds that harm on average over draws, not for "
+            "each). Check the adapted probabilities on labelled rows of the new population, or "
+            "raise min_evidence (with 4, two classes move only where p < 0.05) to move only on "
+            "firm evidence.",
+            NoShiftHarmWarning,
+            stacklevel=3,
+        )
 
     def _warn_imprecise(self, interval: Any, identified: bool) -> None:
         """Warn (once) when the interval of a class share reaches more than ``IMPRECISE_REACH``

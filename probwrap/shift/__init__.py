@@ -33,7 +33,7 @@ from ._estimate import (
 )
 from ._estimator import CALIBRATIONS, INTERVALS, PRIOR_METHODS, PriorEstimator
 from ._interval import bca_interval, jackknife_acceleration, score_interval
-from ._shift_tests import ShiftTestResult, shift_score_test, shift_test
+from ._shift_tests import NoShiftHarmWarning, ShiftTestResult, shift_score_test, shift_test
 
 __all__ = [
     "BiasCorrectedScaling",
@@ -41,6 +41,7 @@ __all__ = [
     "PriorIntervalConflictWarning",
     "FewLabelledRowsWarning",
     "ImprecisePriorWarning",
+    "NoShiftHarmWarning",
     "CALIBRATIONS",
     "ChangePointResult",
     "change_point_posterior",

@@ -86,6 +86,10 @@ class PriorEstimate:
         Expected relative increase of the log loss, when nothing moved, per unit of
         ``E[w(T)^2 T]`` for a rule that applies the share ``w(T)`` of the estimate (see
         :func:`evidence_cutoff`); None where it was not computed.
+    null_move_ratio : float or None
+        The first- over second-order harm of a move on rows whose class shares are exactly the
+        source's (:func:`~probwrap.shift._shift_tests.null_move_ratio`); None where it was not
+        computed.
     """
 
     prior: np.ndarray
@@ -103,6 +107,7 @@ class PriorEstimate:
     null_harm_scale: float | None = None
     ml_interval: np.ndarray | None = None
     pseudo_rows: float | None = None
+    null_move_ratio: float | None = None
 
 
 

@@ -56,6 +56,7 @@ from ._shift_tests import (
     estimate_amplification,
     labelled_log_loss,
     null_harm_scale,
+    null_move_ratio,
 )
 
 __all__ = ["PriorEstimator", "PRIOR_METHODS", "CALIBRATIONS", "INTERVALS"]
@@ -738,9 +739,14 @@ class PriorEstimator(_Resampling):
             if reference is not None and np.isfinite(reference) and reference > 0:
                 loss = min(loss, float(reference))
             harm_scale = _null_harm_scale_moments(mean_p, second, loss, src, test.mean_cov)
+            move_ratio = null_move_ratio(mean_p, second, src, test.mean_cov)
         else:
             harm_scale = null_harm_scale(p, w, src, test.mean_cov,
                                          reference_loss=getattr(self, "_source_log_loss", None))
+            wn_h = w / w.sum()
+            u_h = _score_rows(p, src)
+            move_ratio = null_move_ratio(wn_h @ p, (u_h * wn_h[:, None]).T @ u_h, src,
+                                         test.mean_cov)
         if ml is not None and harm_scale:
             # the move that will be applied is a share of EM's estimate, which can lie far
             # beyond the one-step estimate the harm bound assumes (estimate_amplification)
@@ -884,6 +890,7 @@ class PriorEstimator(_Resampling):
             null_harm_scale=harm_scale,
             ml_interval=ml_bounds,
             pseudo_rows=pseudo,
+            null_move_ratio=move_ratio,
         )
 
     @staticmethod

@@ -20,6 +20,10 @@ __all__ = [
     "null_harm",
     "null_harm_scale",
     "estimate_amplification",
+    "null_move_ratio",
+    "draw_harm",
+    "NoShiftHarmWarning",
+    "draw_cutoff",
 ]
 
 
@@ -222,6 +226,102 @@ def _null_harm_scale_moments(
     if not (loss > 0 and np.isfinite(lam)):
         return 0.0
     return max(lam, 0.0) / (2.0 * loss)
+
+
+class NoShiftHarmWarning(UserWarning):
+    """``adapt`` moved the predictions on evidence that a draw with no shift gives often, and,
+    were the class shares in fact unchanged, that move would raise the log loss of these rows
+    by more than 2 % (see :func:`null_move_ratio`)."""
+
+
+#: Relative log-loss increase above which a move on weak evidence warns (issue 10's 1.02).
+DRAW_HARM_LIMIT = 0.02
+
+
+def draw_harm(harm_scale: float | None, ratio: float | None, statistic: float | None,
+              weight: float) -> float:
+    """Relative log-loss increase of applying the share ``weight`` of the estimate, had the
+    rows' class shares not moved: ``scale * T * (w**2 + 2 * ratio * w)`` (second order; see
+    :func:`null_move_ratio`); 0 where a part is missing.
+
+    Examples
+    --------
+    >>> from probwrap.shift._shift_tests import draw_harm
+    >>> round(draw_harm(0.034, 0.85, 2.18, 0.47), 4)
+    0.0756
+    """
+    if not (harm_scale and statistic and weight > 0) or ratio is None:
+        return 0.0
+    if not (np.isfinite(harm_scale) and np.isfinite(statistic) and np.isfinite(ratio)):
+        return 0.0
+    return float(harm_scale * statistic * (weight**2 + 2.0 * max(float(ratio), 0.0) * weight))
+
+
+def null_move_ratio(
+    mean_proba: np.ndarray, score_second_moment: np.ndarray, source_prior: np.ndarray,
+    mean_cov: np.ndarray,
+) -> float:
+    r"""First- over second-order harm of a move when the unlabelled rows' class shares are
+    exactly the source's: :math:`\mu / \lambda`, with :math:`\mu` the largest eigenvalue of
+    :math:`J\Sigma` and :math:`\lambda` that of :math:`K\Sigma` (notation of
+    :func:`null_harm_scale`).
+
+    :func:`null_harm_scale` bounds the harm of a move *in expectation over the population*,
+    where the unlabelled rows' own label shares vary with their features. On a given set of rows
+    whose label shares equal the source's, the log loss's gradient in the prior is the
+    unlabelled rows' mean score :math:`\bar u` itself, the very noise the one-step estimate
+    :math:`X = J^{-1}\bar u` reads, so applying :math:`wX` costs, to second order,
+    :math:`w X^\top J X + \tfrac12 w^2 X^\top K X \le (w \mu + \tfrac12 w^2 \lambda) T`
+    — a term linear in ``w`` that the expected bound does not carry. With ``scale`` from
+    :func:`null_harm_scale` the relative harm of that draw is at most
+    ``scale * T * (w**2 + 2 * ratio * w)``. For two classes the ratio is ``J / K``, the
+    posteriors' variance over their mean ``p (1 - p)``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift._shift_tests import null_move_ratio
+    >>> # two classes at 0.5: J = 16 var(p), K = 16 E[p(1 - p)] (posteriors 0.2 and 0.8)
+    >>> round(null_move_ratio(np.array([0.5, 0.5]), np.array([[16 * 0.09]]), np.array([0.5, 0.5]),
+    ...                       np.array([[0.01]])), 6)
+    0.5625
+    """
+    src = np.asarray(source_prior, dtype=float)
+    mp = np.asarray(mean_proba, dtype=float)
+    j = np.atleast_2d(np.asarray(score_second_moment, dtype=float))
+    k_mat = np.diag(mp[1:] / src[1:] ** 2) + mp[0] / src[0] ** 2 - j
+    j_inv = np.linalg.pinv(j)
+    sigma = j_inv @ np.atleast_2d(mean_cov) @ j_inv
+    lam = float(np.max(np.linalg.eigvals(k_mat @ sigma).real, initial=0.0))
+    mu = float(np.max(np.linalg.eigvals(j @ sigma).real, initial=0.0))
+    if not (lam > 0 and np.isfinite(lam) and np.isfinite(mu)):
+        return 0.0
+    return max(mu, 0.0) / lam
+
+
+def draw_cutoff(harm_scale: float | None, ratio: float | None, df: int, draw_harm: float,
+                cutoff: float, level: float = 0.95) -> float:
+    r"""Not the default (measured in docs/prior_shift.md, "One draw's harm when nothing moved";
+    ``benchmarks/shift_draw_harm.py``): the cutoff ``c`` (at least ``cutoff``) at which a draw with no shift and the statistic
+    at its ``level`` quantile ``q`` is hurt by at most ``draw_harm`` (relative log loss):
+    ``scale * ((q - a)**2 / q + 2 * ratio * (q - a)) <= draw_harm`` with ``a = c * df``
+    (:func:`null_move_ratio`); the harm grows with ``T``, so under no shift at most
+    ``1 - level`` of the draws exceed ``draw_harm``.
+
+    Examples
+    --------
+    >>> from probwrap.shift._shift_tests import draw_cutoff
+    >>> round(draw_cutoff(0.034, 0.85, 1, 0.02, 1.18), 3)
+    3.512
+    """
+    from scipy.stats import chi2 as chi2_dist
+
+    if harm_scale is None or ratio is None or not np.isfinite(harm_scale) or harm_scale <= 0:
+        return float(cutoff)
+    q = float(chi2_dist.ppf(level, df))
+    r = max(float(ratio), 0.0)
+    x = q * (-r + np.sqrt(r * r + draw_harm / (harm_scale * q)))
+    return float(max(cutoff, (q - x) / df))
 
 
 def estimate_amplification(
