@@ -226,7 +226,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         in the tails; exact zeros become the smallest positive float. Platt's map (named by
         ``method``, or an ``auto`` candidate) is fitted as ``PlattMap(limit_scores=True)``,
         which further clips the scores that lie far beyond every calibration row of the other
-        class (see :class:`~probwrap.calibration.PlattMap`).
+        class (see :class:`~probwrap.calibration.PlattMap`); for a model the wrapper cross-fits, its fit
+        also clips the held-out log-odds to the refitted model's range on the labelled rows
+        (``platt_fit_range_``).
     tally_resolution : float, default=1e-3
         Dask input only: bin width on the log-odds scale of the score tallies that the
         predictions are reduced to (see :mod:`probwrap.scale`); ignored for in-memory input.
@@ -303,6 +305,14 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
     fold_models_ : list of classifier
         The fitted fold models that predict when ``predicted_with_ == "fold_models"``;
         otherwise empty (they are not kept).
+    platt_fit_range_ : tuple of float or None
+        Binary models the wrapper cross-fits from ``predict_proba`` (``predict_with`` not
+        ``"fold_models"``): the smallest and largest log-odds of the refitted model
+        (``estimator_``) on the labelled rows. Platt's map (named by ``method`` or chosen by
+        ``auto``, in the folds too) is fitted on the held-out log-odds clipped to this range:
+        it is applied to the refitted model's scores, and a fold model's scores far beyond
+        them (naive Bayes without the few rows that tame a column) would flatten its slope.
+        None otherwise (frozen models, multiclass, ``decision_function``).
     refit_spread_ratios_ : ndarray of shape (n_folds,)
         Cross-fitted models only (empty for a frozen one): for each fold model, the spread
         (standard deviation) of the refitted model's map input scores on the labelled rows over
@@ -399,7 +409,11 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         if _multiclass_dask(self.estimator, X, y, sample_weight):
             return self._fit_multiclass_dask(X, y, sample_weight)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
-        self._fit_on_heldout(ho)
+        self._platt_range = self._refit_score_range(X, ho)
+        try:
+            self._fit_on_heldout(ho)
+        finally:
+            self.__dict__.pop("_platt_range", None)
         self._choose_predicting_models(X, ho)
         scores, w = self.__dict__.pop("_map_rows")
         if self.method == "auto":
@@ -416,6 +430,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         self.response_ = ho.response
         self._cross_fitted = ho.n_folds > 0
         self.clip_ = self._choose_clip(ho.values, ho.sample_weight)
+        self.platt_fit_range_ = getattr(self, "_platt_range", None)
         scores = self._to_scores(ho.values)
         w = self._count_scale_weights(ho.sample_weight)
         if isinstance(self.method, CalibrationMap):
@@ -467,6 +482,38 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         self._map_rows = (scores, w)  # for _cap_level_sharpening after the predicting models
         self._warn_reversed(len(ho.y_index))
         return self
+
+    def _refit_score_range(self, X: Any, ho: Any) -> tuple[float, float] | None:
+        """``(low, high)``: the smallest and largest log-odds of the model refitted on all rows
+        (``estimator_``) on the labelled rows of weight > 0, for a binary model the wrapper
+        cross-fits from ``predict_proba`` (else None; ``predict_with="fold_models"``: None).
+
+        Platt's map is fitted on the fold models' held-out log-odds clipped to this range
+        (``platt_fit_range_``), because it is applied to the refitted model, whose scores on
+        these rows never leave it. A fold model that lacked the few rows that tame a column
+        can score the rows it holds out far beyond anything the refitted model gives: Gaussian
+        naive Bayes on pscl's iraqVote (50 senators, the party nearly decides the vote), the
+        fold without the one Republican who voted no gave him a log-odds of +744 for yes and
+        seven Democrats who voted yes -10 to -12, while the refitted model scores the same
+        rows from -2 to +10; fitted on the raw scores, Platt's slope fell to 0.05 and the test
+        log loss was 0.505 against scikit-learn's sigmoid's 0.391 (docs/small_data.md,
+        twenty-second session, "Platt's fit within the refitted model's range").
+        """
+        if (ho.n_folds == 0 or len(self.classes_) != 2 or ho.response != "predict_proba"
+                or self.predict_with == "fold_models"):
+            return None
+        values = np.asarray(self.estimator_.predict_proba(X), dtype=float)
+        if values.ndim != 2 or values.shape[0] != ho.y_index.shape[0]:
+            return None
+        lp = np.log(np.maximum(values[:, -2:], _TINY))
+        s = lp[:, 1] - lp[:, 0]
+        w = ho.sample_weight
+        if w is not None and np.shape(w) == s.shape:
+            s = s[np.asarray(w) > 0]
+        s = s[np.isfinite(s)]
+        if s.size == 0 or not s.max() > s.min():
+            return None
+        return float(s.min()), float(s.max())
 
     def _class_shares_map(self, scores: np.ndarray, y_index: np.ndarray,
                           w: np.ndarray) -> PlattMap:
@@ -812,6 +859,11 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             # (see PlattMap)
             template = clone(template).set_params(limit_scores=True)
         if scores.ndim == 1:
+            limits = getattr(self, "_platt_range", None)
+            if limits is not None and type(template) is PlattMap and template.limit_scores:
+                # the map serves the refitted model: fold models' scores beyond its range are
+                # fitted as at its ends (see _refit_score_range)
+                scores = np.clip(scores, limits[0], limits[1])
             fitted = clone(template).fit(self._map_input(template, scores), y_index, sample_weight=w)
             self._keep_order(fitted, y_index, w)
             return fitted
