@@ -175,6 +175,15 @@ def _scaling_terms(block, theta, n_scale, k, total, clip):
     return np.array([loss]), grad, hess
 
 
+def _floored_sums(block, a, b, total, clip, floor):
+    """A block's share of probwrap.shift._calibration.floored_terms (weights over ``total``)."""
+    from ..calibration._logodds import proba_to_log_proba
+    from ..shift._calibration import floored_terms
+
+    p, _, _, w = block
+    return floored_terms(proba_to_log_proba(p, clip=clip), w / total, a, b, floor)
+
+
 def _confusions(block, calibrator, k):
     p, _, y, w = block
     if calibrator is not None:
@@ -224,6 +233,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
         BiasCorrectedScaling,
         _floor,
         _newton,
+        floored_bias,
         identity_test,
         scale_penalty,
     )
@@ -324,6 +334,10 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
             cal.converged_ = bool(converged)
             cal.floor_ = _floor(n_rows, k)
             cal.clip_ = clip
+            # as in memory: the biases re-solved for the floored outputs (floored_bias)
+            cal.bias_ = floored_bias(
+                lambda bb: parts.reduce(_floored_sums, cal.scale_, bb, total, clip, cal.floor_),
+                cal.bias_, class_weight / total, cal.floor_)
         hard, soft, loss_sum = parts.reduce(_confusions, cal, k)
         su, suu, sw, sww = parts.reduce(_class_score_sums, cal, class_weight / total)
         eta_sums = None
