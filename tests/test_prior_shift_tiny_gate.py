@@ -44,8 +44,10 @@ def test_no_shift_naive_bayes_20_rows_does_not_move(digits_nb):
         wrapper.adapt(X[new])
     # nothing moved (the unlabelled rows are the same population). The shift statistic is
     # large (5.4: the 20-row calibration leaves the posteriors off), and EM's maximum-likelihood
-    # share of the 8s is 0.56 against a one-step estimate of about 0.28 from the source's 0.1:
-    # the harm bound grows 6.3-fold and the gate holds. Before, the gate moved the share to
+    # share of the 8s is 0.51 against a one-step estimate of about 0.34 from the source's 0.1:
+    # the harm bound grows 2.9-fold and the gate holds. (Before the calibration's biases were
+    # re-solved for its output floor, the floored posteriors of the 20 labelled rows averaged
+    # 0.117 against their 0.10: EM's share 0.56, one-step 0.28, 6.3-fold.) Before, the gate moved the share to
     # 0.227 and the test log loss rose 1.60x (the benchmark's tail: benchmarks/shift.py
     # --only=tiny, digits 8 with naive Bayes and 20 rows).
     assert wrapper.prior_estimate_.shift_statistic > 5
@@ -113,7 +115,7 @@ def test_amplification_against_scipy_derivatives_and_optimiser(digits_nb):
     base = null_harm_scale(p, np.ones(p.shape[0]), wrapper.source_prior_,
                            _mean_cov_of(wrapper, p), reference_loss=est._source_log_loss)
     factor = max(1.0, ((ml - s) / one_step) ** 2)
-    assert factor > 5  # the case under test: EM moved far beyond the one-step estimate
+    assert factor > 2.5  # the case under test: EM moved far beyond the one-step estimate
     assert res.null_harm_scale == pytest.approx(base * factor, rel=1e-4)
 
 
