@@ -37,6 +37,7 @@ LAYERS = {
     "_heldout": 3,
     "_calibration_wrapper": 3,
     "_calibration_auto": 3,
+    "_calibration_shares": 3,  # the class-shares entry of auto (reads calibration maps)
     "_cost_policy": 3,
     "_cost_policy_summary": 3,
     "_cost_policy_rules": 3,

@@ -65,7 +65,8 @@ def test_binary_wrappers_on_spark_fit_the_rows_as_in_memory(spark):
 
     mem = CostPolicyWrapper(nb, costs=COSTS, strategy="tuned").fit(X, y)
     spk = CostPolicyWrapper(nb, costs=COSTS, strategy="tuned").fit(frame, "label")
-    assert spk.cutoff_ == mem.cutoff_
+    # equal but for the last digit: the anchor's Platt map sums the rows in Spark's order
+    assert spk.cutoff_ == pytest.approx(mem.cutoff_, rel=1e-12)
     p = nb.predict_proba(X)[:, 1]
     tn, fp, fn, tp = confusion_matrix(y, (p > spk.cutoff_).astype(int)).ravel()
     # held-out cost of the rule, from scikit-learn's confusion matrix
@@ -129,4 +130,5 @@ def test_the_driver_collects_at_most_the_kept_rows_limit(spark, monkeypatch):
     # silently; tests/test_spark_user_messages.py has a total above the limit)
     assert uneven.tally_.kept_rows is not None
     mem = CostPolicyWrapper(model, costs=COSTS, strategy="tuned").fit(X, y)
-    assert even.cutoff_ == mem.cutoff_ == uneven.cutoff_
+    assert even.cutoff_ == pytest.approx(mem.cutoff_, rel=1e-12)
+    assert uneven.cutoff_ == pytest.approx(mem.cutoff_, rel=1e-12)
