@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from ._common import DataError, add_seed_flag, require, whole_number
+from ._common import DataError, add_seed_flag, is_standard_stream, require, whole_number
 from ._files import check_writable, write_text
 from ._progress import Stages
 
@@ -33,7 +33,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         "print a summary and write DIR/report.html, with the score files the other verbs' "
         "examples use (DIR/heldout.csv, DIR/this-week.csv, DIR/winter.csv).",
     )
-    parser.add_argument("--out", required=True, metavar="DIR", help="directory for report.html")
+    parser.add_argument("--out", required=True, metavar="DIR",
+                        help="folder for report.html and the example score files (not '-': "
+                        "standard output cannot hold several files)")
     parser.add_argument("--n-train", type=whole_number(500), default=4000, metavar="N",
                         help="summer parcels for training (default 4000, at least 500)")
     add_seed_flag(parser, "the data, the folds and the bootstraps (the same seed gives the "
@@ -44,7 +46,20 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         "routed to ship, repack (4) or hold (12, at most 3%% of parcels), with costs from each "
         "parcel's value",
     )
-    parser.set_defaults(func=_handler)
+    parser.set_defaults(func=_handler, _parser=parser)
+
+
+def _refuse_standard_output(args: argparse.Namespace) -> None:
+    """``--out -`` is a usage error: the demo writes a folder of files (the page and, for the
+    damage variant, three score files), which standard output cannot hold; before, a folder
+    named "-" was made without a word."""
+    if is_standard_stream(args.out):
+        args._parser.error(
+            "--out -: --out names the folder the demo writes into (report.html"
+            + ("" if args.variant == "three-way" else ", heldout.csv, this-week.csv, winter.csv")
+            + "), and standard output cannot be a folder; give a folder name, such as "
+            "--out demo-output (for one page on standard output use 'probwrap report --out -')"
+        )
 
 
 def _write_page(out: Path, page: str) -> Path:
@@ -282,6 +297,7 @@ def share_lines(c: Any, true_shares: Any) -> list[str]:
 
 
 def _three_way_handler(args: argparse.Namespace) -> int:
+    _refuse_standard_output(args)
     start = time.perf_counter()
     check_writable(args.out, folder=True)
     with Stages("demo", DEMO_STEPS["three-way"]) as stages:
@@ -344,6 +360,7 @@ def prevalence_lines(c: Any, true_share: float) -> list[str]:
 def _handler(args: argparse.Namespace) -> int:
     if getattr(args, "variant", "damage") == "three-way":
         return _three_way_handler(args)
+    _refuse_standard_output(args)
     start = time.perf_counter()
     check_writable(args.out, folder=True)
     with Stages("demo", DEMO_STEPS["damage"]) as stages:

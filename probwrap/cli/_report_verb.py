@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import sys
 import warnings
 from typing import Any
 
@@ -31,7 +32,7 @@ from ._common import (
     weight_summary,
     whole_number,
 )
-from ._files import check_out_suffix, check_writable, write_text
+from ._files import check_out_suffix, check_writable, to_stdout, write_text
 from ._progress import Stages
 from ._promise_flags import (
     add_alarm_flags,
@@ -142,7 +143,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     add_seed_flag(parser, "the bootstraps and folds")
     parser.add_argument("--title", default="probwrap report", help="report title")
     parser.add_argument("--out", required=True, metavar="FILE",
-                        help="HTML file to write (.html or .htm)")
+                        help="HTML file to write (.html or .htm); '-': write the page to "
+                        "standard output (the summary line then goes to stderr)")
     add_format_flag(parser)
     parser.set_defaults(func=_handler, _parser=parser)
 
@@ -267,7 +269,8 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         )
     summary = {"out": args.out, "n_rows": int(content.n_rows),
                "n_classes": int(content.n_classes)}
-    line = f"wrote {args.out}: {content.n_rows} labelled rows, {content.n_classes} classes"
+    line = (f"wrote {_written_to(args.out)}: {content.n_rows} labelled rows, "
+            f"{content.n_classes} classes")
     if content.rules:
         summary["mean_cost_rule_in_use"] = float(content.rules[0].mean_cost)
         line += f", mean cost of the rule in use {content.rules[0].mean_cost:.4f}"
@@ -515,16 +518,29 @@ def cell_summary(content: Any, summary: dict) -> str:
     return cells + words
 
 
+def _written_to(out: str) -> str:
+    """Where the page went, for the summary line."""
+    return "the page to standard output" if to_stdout(out) else out
+
+
 def _print_summary(args: argparse.Namespace, line: str, summary: dict) -> None:
+    """The summary on standard output, or on stderr when the page went to standard output
+    (``--out -``), which then holds the page alone."""
     if args.format == "json":
         print(json.dumps(summary, indent=2, allow_nan=False))
+    elif to_stdout(args.out):
+        print(line, file=sys.stderr)
     else:
         print(line)
 
 
 def _handler(args: argparse.Namespace) -> int:
     parser: argparse.ArgumentParser = args._parser
-    check_out_suffix(parser, args.out, REPORT_SUFFIXES)
+    check_out_suffix(parser, args.out, REPORT_SUFFIXES, stdout="the page")
+    if to_stdout(args.out) and args.format == "json":
+        parser.error("--out - with --format json: the page and the JSON summary cannot both "
+                     "go to standard output; write the page to a file (--out report.html), or "
+                     "leave out --format json (the summary line then goes to stderr)")
     if args.resamples < MIN_RESAMPLES:  # pragma: no cover - the flag's type refuses it
         parser.error(f"--resamples must be at least {MIN_RESAMPLES}")
     if (args.score_column is None) == (args.class_columns is None):
@@ -636,7 +652,8 @@ def _handler(args: argparse.Namespace) -> int:
         )
     summary = {"out": args.out, "n_rows": int(content.n_rows),
                "labels": {"negative": labels[0], "positive": labels[1]}}
-    line = f"wrote {args.out}: {content.n_rows} labelled rows (positive label {shown(labels[1])})"
+    line = (f"wrote {_written_to(args.out)}: {content.n_rows} labelled rows (positive label "
+            f"{shown(labels[1])})")
     if content.chosen_cutoff is not None:
         summary["cutoff"] = float(content.chosen_cutoff)
         rec = getattr(content, "recommendation", None)
