@@ -21,6 +21,7 @@ import numpy as np
 
 from .._validation import plain
 from ._common import (
+    NAMED_ROWS,
     DataError,
     StandardStream,
     add_positive_label_flag,
@@ -31,6 +32,7 @@ from ._common import (
     clean,
     is_standard_stream,
     require,
+    rows_text,
     shown,
     warn_line,
     whole_number,
@@ -365,23 +367,13 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
 
 
 #: rows with a missing score named in the warning of ``calibrate apply --missing keep``
-_NAMED_MISSING = 5
+_NAMED_MISSING = NAMED_ROWS
 
 
 def _missing_rows_text(path: Any, rows: np.ndarray) -> str:
-    """The first :data:`_NAMED_MISSING` of ``rows`` (0-based data rows) as a message names them:
-    "rows 3, 7 and 9 (counting the header as row 1)"."""
-    from ._common import row_number
-
-    shown_rows = [row_number(path, int(r)).split(" ", 2)[1] for r in rows[:_NAMED_MISSING]]
-    counting = row_number(path, 0).split(" ", 2)[2]
-    if rows.shape[0] > _NAMED_MISSING:
-        listed = ", ".join(shown_rows) + ", ..."
-    elif len(shown_rows) > 1:
-        listed = ", ".join(shown_rows[:-1]) + " and " + shown_rows[-1]
-    else:
-        listed = shown_rows[0]
-    return f"{'row' if rows.shape[0] == 1 else 'rows'} {listed} {counting}"
+    """The first rows of ``rows`` (0-based data rows) as a message names them (see
+    :func:`._common.rows_text`)."""
+    return rows_text(path, rows)
 
 
 def _apply(args: argparse.Namespace) -> int:

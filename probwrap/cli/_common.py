@@ -25,7 +25,7 @@ __all__ = [
     "FEW_ROWS", "MIN_RESAMPLES", "add_positive_label_flag", "add_format_flag",
     "add_resamples_flag", "whole_number", "add_seed_flag", "MAX_SEED", "add_weight_flag",
     "weight_summary", "not_a_number", "FREQUENCY_WEIGHT_LIMIT", "StandardStream",
-    "is_standard_stream", "INPUT_OPTIONS",
+    "is_standard_stream", "INPUT_OPTIONS", "NAMED_ROWS", "rows_text", "missing_count_text",
 ]
 
 
@@ -160,6 +160,49 @@ def row_number(path: str | Path, row: int) -> str:
     if table_kind(path if isinstance(path, StandardStream) else Path(path)) == "Parquet":
         return f"row {row + 1} (counting the first row as row 1)"
     return f"row {row + 2} (counting the header as row 1)"
+
+
+#: rows named in a message about missing values (the rest are counted)
+NAMED_ROWS = 5
+
+
+def rows_text(path: str | Path, rows: np.ndarray) -> str:
+    """The first :data:`NAMED_ROWS` of ``rows`` (0-based data rows) as a message names them:
+    "rows 3, 7 and 9 (counting the header as row 1)".
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rows_text("a.csv", np.array([3, 50, 200]))
+    'rows 5, 52 and 202 (counting the header as row 1)'
+    """
+    shown_rows = [row_number(path, int(r)).split(" ", 2)[1] for r in rows[:NAMED_ROWS]]
+    counting = row_number(path, 0).split(" ", 2)[2]
+    if rows.shape[0] > NAMED_ROWS:
+        listed = ", ".join(shown_rows) + ", ..."
+    elif len(shown_rows) > 1:
+        listed = ", ".join(shown_rows[:-1]) + " and " + shown_rows[-1]
+    else:
+        listed = shown_rows[0]
+    return f"{'row' if rows.shape[0] == 1 else 'rows'} {listed} {counting}"
+
+
+def missing_count_text(path: str | Path, missing: np.ndarray) -> str:
+    """After "row R: the value is missing": how many rows of the column have none and which,
+    when more than one, so that a user fixing the file sees every such row at once, and what to
+    do; "" when ``missing`` (a boolean mask over the rows) marks one row only.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> print(missing_count_text("a.csv", np.array([False, True, False, True])))
+    ; 2 of 4 rows have none in this column: rows 3 and 5 (counting the header as row 1); fill them in or remove those rows
+    """
+    rows = np.flatnonzero(missing)
+    if rows.shape[0] < 2:
+        return ""
+    return (f"; {rows.shape[0]} of {missing.shape[0]} rows have none in this column: "
+            f"{rows_text(path, rows)}; fill them in or remove those rows")
 
 
 def one_line(exc: BaseException) -> str:

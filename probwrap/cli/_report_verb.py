@@ -170,6 +170,79 @@ def _cost_matrix(text: str, parser: argparse.ArgumentParser) -> np.ndarray:
     return matrix
 
 
+#: how far from 1 a row of class probabilities may sum without a word (float rounding)
+SUM_TOLERANCE = 1e-6
+#: the most decimals looked for when class probabilities may have been rounded
+MAX_ROUNDED_DECIMALS = 6
+#: rows off by more than this are refused even where rounding could explain it (many classes
+#: at one or two decimals): our rule of thumb
+MAX_ROUNDING_GAP = 0.05
+
+
+def rounded_decimals(P: np.ndarray) -> int | None:
+    """The fewest decimals every value of ``P`` is written with (1 to
+    :data:`MAX_ROUNDED_DECIMALS`), or None when they carry more.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rounded_decimals(np.array([[0.125, 0.875], [0.5, 0.5]])), rounded_decimals(np.array([[1 / 3]]))
+    (3, None)
+    """
+    for d in range(1, MAX_ROUNDED_DECIMALS + 1):
+        scaled = P * 10.0**d
+        if np.all(np.abs(scaled - np.round(scaled)) <= 1e-6):
+            return d
+    return None
+
+
+def rounded_rows_to_one(P: np.ndarray, path: Any, verb: str = "report") -> np.ndarray:
+    """Rows of class probabilities that sum to 1, as the report needs.
+
+    Probabilities rounded to d decimals (a spreadsheet's export, ``round(3)``) sum to 1 only
+    within k times half a unit in the last place for k classes (0.999 or 1.001 for three
+    columns at 3 decimals). Rows within that bound (and within :data:`MAX_ROUNDING_GAP`) are
+    divided by their sum, with a warning
+    that counts them; a row beyond it (or beyond :data:`SUM_TOLERANCE` when the values carry
+    more than :data:`MAX_ROUNDED_DECIMALS` decimals) is refused, naming it. Before 4 December
+    2026 every row off by more than 1e-6 was refused, so a file of probabilities rounded to 3
+    decimals could not be read.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rounded_rows_to_one(np.array([[0.334, 0.333, 0.334], [0.2, 0.3, 0.5]]), "a.csv")
+    ... # doctest: +NORMALIZE_WHITESPACE
+    array([[0.33366633, 0.33266733, 0.33366633],
+           [0.2       , 0.3       , 0.5       ]])
+    """
+    sums = P.sum(axis=1)
+    gap = np.abs(sums - 1.0)
+    off = gap > SUM_TOLERANCE
+    if not off.any():
+        return P
+    decimals = rounded_decimals(P)
+    bound = None if decimals is None else min(P.shape[1] * 0.5 * 10.0**-decimals,
+                                              MAX_ROUNDING_GAP)
+    allowed = SUM_TOLERANCE if bound is None else bound + SUM_TOLERANCE
+    beyond = gap > allowed
+    if beyond.any():
+        row = int(np.flatnonzero(beyond)[0])
+        because = ("" if decimals is None else
+                   f", more than rounding {P.shape[1]} probabilities to {decimals} decimals "
+                   f"explains (at most {bound:.2g} off)")
+        raise DataError(f"{path}: {row_number(path, row)}: the class probabilities sum to "
+                        f"{shown(sums[row])}, not 1{because}")
+    warn_line(verb, (
+        f"{path}: {int(off.sum())} of {P.shape[0]} rows' class probabilities sum to "
+        f"{sums[off].min():.{decimals + 1}f} to {sums[off].max():.{decimals + 1}f}, not 1, as "
+        f"probabilities rounded to {decimals} decimals do; each such row was divided by its "
+        "sum"))
+    out = P.copy()
+    out[off] /= sums[off, None]
+    return out
+
+
 def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
     columns = _split(args.class_columns)
     if len(columns) < 2:
@@ -221,13 +294,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
 
     def probabilities(path, frame):
         P = np.column_stack([_probabilities(frame, c, path, "--class-columns") for c in columns])
-        sums = P.sum(axis=1)
-        bad = np.abs(sums - 1.0) > 1e-6
-        if bad.any():
-            row = int(np.flatnonzero(bad)[0])
-            raise DataError(f"{path}: {row_number(path, row)}: the class "
-                            f"probabilities sum to {shown(sums[row])}, not 1")
-        return P
+        return rounded_rows_to_one(P, path)
 
     with Stages("report", ["reading", "computing the report", "writing"]) as stages:
         stages.start("reading")

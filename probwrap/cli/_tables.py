@@ -24,6 +24,7 @@ from ._common import (
     StandardStream,
     clean,
     is_standard_stream,
+    missing_count_text,
     one_line,
     require,
     row_number,
@@ -250,8 +251,17 @@ def _blank_lines_as_missing(pd: Any, frame: Any, path: Path, encoding: str, sep:
 
 
 def _check_field_counts(path: Path, sep: str, encoding: str) -> None:
-    """A DataError naming the first line with more (non-empty) fields than the header."""
+    """A DataError naming the first line with more (non-empty) fields than the header.
+
+    When that line is the first after the header and the lines after it have as many fields
+    (up to :data:`_LOOK_AHEAD` looked at) and it holds no number, the "header" is most likely a
+    title or a note above the real header (an export's "Scores from ..., 2026-12-01" line),
+    and the message says so.
+    """
     header: int | None = None
+    header_line = 0
+    data_rows = 0
+    after: list[int] = []
     try:
         with _open_text(path, encoding) as handle:
             reader = csv.reader(handle, delimiter=sep)
@@ -260,13 +270,31 @@ def _check_field_counts(path: Path, sep: str, encoding: str) -> None:
                         reader.line_num == 1 and _SEP_LINE.fullmatch(sep.join(row))):
                     continue
                 if header is None:
-                    header = len(row)
-                elif len(row) > header and any(field.strip() for field in row[header:]):
+                    header, header_line = len(row), reader.line_num
+                    continue
+                data_rows += 1
+                if len(row) > header and any(field.strip() for field in row[header:]):
                     break
             else:
                 return
+            line, fields = reader.line_num, len(row)
+            if data_rows == 1:  # the first line after the header: look at the next ones
+                for more in reader:
+                    if any(field.strip() for field in more):
+                        after.append(len(more))
+                    if len(after) >= _LOOK_AHEAD:
+                        break
     except _UNREADABLE:
         return
+    names = all(_number(field) is None for field in row if field.strip())
+    if data_rows == 1 and names and after and all(n == fields for n in after):
+        # the line after the "header" holds no number: it is the header, below a title
+        raise DataError(
+            f"{path}: line {header_line} has {header} field{'s' if header != 1 else ''} but "
+            f"the lines after it have {fields}, so it cannot be the header; if the file starts "
+            "with a title or notes above the header line, delete them so that the column "
+            "names come first"
+        )
     hint = (
         "; a number written with a decimal comma in a comma-separated file (0,42) makes two "
         "fields: write it with a decimal point, or separate the fields with ';' (a "
@@ -274,9 +302,13 @@ def _check_field_counts(path: Path, sep: str, encoding: str) -> None:
         if sep == "," else ""
     )
     raise DataError(
-        f"{path}: line {reader.line_num} has {len(row)} fields but the header has {header}, so "
+        f"{path}: line {line} has {fields} fields but the header has {header}, so "
         f"the columns cannot be told apart{hint}"
     )
+
+
+#: lines after the first data line looked at to tell a title line above the header
+_LOOK_AHEAD = 20
 
 
 #: extensions of files that are not tables this command reads, and what they are
@@ -509,9 +541,9 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
         row = int(np.flatnonzero(bad)[0])
         raw_value = series.iloc[row]
         hint = infinite_hint if np.isinf(values[row]) else ""
-        what = "the value is missing" if pd.isna(raw_value) else (
-            f"{shown(raw_value)} is not a finite number{hint or _number_hint(raw_value)}"
-        )
+        what = ("the value is missing" + missing_count_text(path, series.isna().to_numpy())
+                if pd.isna(raw_value) else
+                f"{shown(raw_value)} is not a finite number{hint or _number_hint(raw_value)}")
         raise DataError(f"{_row(path, column, row)}: {what}")
     return values
 
@@ -586,7 +618,8 @@ def read_labels(
     missing = series.isna().to_numpy()
     if missing.any():
         row = int(np.flatnonzero(missing)[0])
-        raise DataError(f"{_row(path, column, row)}: the label is missing")
+        raise DataError(f"{_row(path, column, row)}: the label is missing"
+                        + missing_count_text(path, missing))
     if pd.api.types.is_numeric_dtype(series.dtype) or pd.api.types.is_bool_dtype(series.dtype):
         values = series.to_numpy()
     else:
@@ -611,9 +644,16 @@ def read_labels(
             if str(v) == positive or (numbers[i] is not None and _number(positive) == numbers[i])
         ]
         if len(matches) != 1:
+            near = [v for v in distinct
+                    if str(v).strip().casefold() == str(positive).strip().casefold()]
+            hint = ""
+            if len(near) == 1:  # "yes" for "Yes", "yes " for "yes": labels match exactly
+                hint = (f"; labels are matched exactly, case and spaces included: give "
+                        f"--positive-label {shlex.quote(clean(str(near[0])))}")
             raise DataError(
                 f"{path}: column {shown(column)} has no label {shown(positive)} (given by "
                 f"--positive-label); its labels are {shown(distinct[0])} and {shown(distinct[1])}"
+                + hint
             )
         pos_index = matches[0]
     elif zero_one:

@@ -59,6 +59,10 @@ _RULES: list[tuple[re.Pattern[str], str]] = [(re.compile(a), b) for a, b in [
     (r"\bBetaMap keeps", "the beta map keeps"),
     (r"\bPlattMap keeps", "Platt's map keeps"),
     (r"\b(?:CalibrationWrapper|guaranteed_cutoff): ", ""),
+    # bootstrap intervals: `metric` is the Python argument of the number resampled
+    (r"because `metric` could not be evaluated on them", "because the number could not be "
+     "computed on them"),
+    (r"`metric` could be evaluated on only", "the number could be computed on only"),
 ]]
 
 
