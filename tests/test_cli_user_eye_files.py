@@ -213,3 +213,38 @@ def test_bootstrap_warnings_do_not_name_the_python_argument(tmp_path, capsys):
     assert code == 0, err
     assert "resamples were left out because the number could not be computed" in err
     assert "`metric`" not in err
+
+
+@pytest.mark.parametrize("argv, hint", [
+    (["prevalence", "--unlabelled", "u.csv", "--score-column", "p",
+      "--source-prevalence", "4"], "--source-prevalence: must be a share strictly between 0 "
+     "and 1; got 4; 4 looks like a percentage: write it as the share 0.04"),
+    (["cutoff", "--scores", "s.csv", "--score-column", "p", "--label-column", "y",
+      "--cost-fp", "1", "--cost-fn", "2", "--capacity", "10"],
+     "--capacity: must be a share of rows in (0, 1]; got 10; 10 looks like a percentage: "
+     "write it as the share 0.1"),
+    (["cutoff", "--scores", "s.csv", "--score-column", "p", "--label-column", "y",
+      "--cost-fp", "1", "--cost-fn", "2", "--confidence", "95"],
+     "--confidence: must be in (0, 1); got 95; 95 looks like a percentage: write it as the "
+     "share 0.95"),
+    (["cutoff", "--scores", "s.csv", "--score-column", "p", "--label-column", "y",
+      "--cost-fp", "1", "--cost-fn", "2", "--guarantee", "recall", "--guarantee-target", "80"],
+     "got 80; 80 looks like a percentage: write it as the share 0.8"),
+    (["report", "--scores", "s.csv", "--score-column", "p", "--label-column", "y",
+      "--cost-fp", "1", "--cost-fn", "2", "--capacity", "25", "--out", "r.html"],
+     "--capacity must be a share in (0, 1]; got 25; 25 looks like a percentage: write it as "
+     "the share 0.25"),
+])
+def test_a_share_given_in_percent_is_named(argv, hint, capsys):
+    with pytest.raises(SystemExit) as info:
+        main(argv)
+    assert info.value.code == 2
+    assert hint in capsys.readouterr().err
+
+
+def test_a_share_out_of_range_otherwise_has_no_percent_hint(capsys):
+    with pytest.raises(SystemExit):
+        main(["prevalence", "--unlabelled", "u.csv", "--score-column", "p",
+              "--source-prevalence", "150"])
+    err = capsys.readouterr().err
+    assert "got 150" in err and "percentage" not in err

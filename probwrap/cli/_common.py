@@ -26,6 +26,7 @@ __all__ = [
     "add_resamples_flag", "whole_number", "add_seed_flag", "MAX_SEED", "add_weight_flag",
     "weight_summary", "not_a_number", "FREQUENCY_WEIGHT_LIMIT", "StandardStream",
     "is_standard_stream", "INPUT_OPTIONS", "NAMED_ROWS", "rows_text", "missing_count_text",
+    "percent_hint",
 ]
 
 
@@ -317,6 +318,20 @@ def not_a_number(text: str) -> argparse.ArgumentTypeError:
     if re.fullmatch(r"\s*[-+]?\d*,\d+(?:[eE][-+]?\d+)?\s*", text):
         hint = f" (write the decimal mark as a point: {text.strip().replace(',', '.')})"
     return argparse.ArgumentTypeError(f"{plain(text)!r} is not a number{hint}")
+
+
+def percent_hint(value: float) -> str:
+    """For a share given in percent (``--capacity 10``, ``--source-prevalence 4``): a hint with
+    the share to write; "" for other values.
+
+    Examples
+    --------
+    >>> percent_hint(10.0), percent_hint(-1.0)
+    ('; 10 looks like a percentage: write it as the share 0.1', '')
+    """
+    if 1.0 < value <= 100.0:
+        return f"; {value:g} looks like a percentage: write it as the share {value / 100:g}"
+    return ""
 
 
 def add_weight_flag(parser: argparse.ArgumentParser) -> None:

@@ -27,6 +27,7 @@ from ._common import (
     check_ranking,
     check_row_count,
     not_a_number,
+    percent_hint,
     shown,
     weight_summary,
 )
@@ -58,14 +59,15 @@ def _finite_number(text: str) -> float:
 def _share(text: str) -> float:
     value = _finite_number(text)
     if not 0.0 < value <= 1.0:
-        raise argparse.ArgumentTypeError(f"must be a share of rows in (0, 1]; got {text}")
+        raise argparse.ArgumentTypeError(f"must be a share of rows in (0, 1]; got {text}"
+                                         f"{percent_hint(value)}")
     return value
 
 
 def _level(text: str) -> float:
     value = _finite_number(text)
     if not 0.0 < value < 1.0:
-        raise argparse.ArgumentTypeError(f"must be in (0, 1); got {text}")
+        raise argparse.ArgumentTypeError(f"must be in (0, 1); got {text}{percent_hint(value)}")
     return value
 
 

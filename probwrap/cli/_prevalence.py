@@ -45,6 +45,7 @@ from ._common import (
     check_ranking,
     check_row_count,
     not_a_number,
+    percent_hint,
     row_number,
     warn_line,
     weight_summary,
@@ -73,7 +74,8 @@ def _prevalence(text: str) -> float:
     except ValueError:
         raise not_a_number(text) from None
     if not 0.0 < value < 1.0:
-        raise argparse.ArgumentTypeError(f"must be a share strictly between 0 and 1; got {text}")
+        raise argparse.ArgumentTypeError(f"must be a share strictly between 0 and 1; got {text}"
+                                         f"{percent_hint(value)}")
     return value
 
 

@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 
 from .._validation import cutoff_text, plain
-from ._common import DataError, clean, not_a_number, shown
+from ._common import DataError, clean, not_a_number, percent_hint, shown
 from ._tables import numeric_column
 
 __all__ = ["add_late_label_flags", "late_label_columns", "read_late_labels",
@@ -34,7 +34,7 @@ def level(text: str) -> float:
     except ValueError:
         raise not_a_number(text) from None
     if not 0.0 < value < 1.0:
-        raise argparse.ArgumentTypeError(f"must be in (0, 1); got {text}")
+        raise argparse.ArgumentTypeError(f"must be in (0, 1); got {text}{percent_hint(value)}")
     return value
 
 

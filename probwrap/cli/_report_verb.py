@@ -25,6 +25,7 @@ from ._common import (
     check_row_count,
     clean,
     not_a_number,
+    percent_hint,
     require,
     row_number,
     shown,
@@ -271,7 +272,8 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
     if args.scale != "proba":
         parser.error("--class-columns take probabilities; --scale log-odds is for binary files")
     if args.capacity is not None and not 0 < args.capacity <= 1:
-        parser.error(f"--capacity must be a share in (0, 1]; got {args.capacity:g}")
+        parser.error(f"--capacity must be a share in (0, 1]; got {args.capacity:g}"
+                     f"{percent_hint(args.capacity)}")
     check_writable(args.out)
     matrix = None if args.cost_matrix is None else _cost_matrix(args.cost_matrix, parser)
     if matrix is not None and matrix.shape[0] != len(columns):
@@ -628,7 +630,8 @@ def _handler(args: argparse.Namespace) -> int:
     if len(given) == 1:
         parser.error("give both --cost-fp and --cost-fn, or neither")
     if args.capacity is not None and not 0 < args.capacity <= 1:
-        parser.error(f"--capacity must be a share in (0, 1]; got {args.capacity:g}")
+        parser.error(f"--capacity must be a share in (0, 1]; got {args.capacity:g}"
+                     f"{percent_hint(args.capacity)}")
     if args.capacity is not None and not given:
         parser.error("--capacity needs costs (--cost-fp and --cost-fn)")
     if args.batch_size is not None and args.unlabelled is None:
