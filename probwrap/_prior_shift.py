@@ -28,6 +28,8 @@ from .shift._shift_tests import evidence_cutoff
 
 #: Fewer labelled rows of a class than this makes ``fit`` warn (see ``_warn_few_class_rows``).
 MIN_CLASS_ROWS = 5
+#: What ``target_prior_interval_`` holds with more than two classes (``interval_covers``).
+_INTERVAL_COVERS = ("each_class", "all_classes")
 
 #: ``adapt`` warns (NoShiftHarmWarning) about a move made at a shift-test p-value at least this
 #: large that would cost more than 2 % had nothing moved: at 0.10 it fired on both quiet no-shift
@@ -356,6 +358,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         tally_resolution: float = 1e-3,
         keep_heldout: bool = False,
         predict_with: str = "auto",
+        interval_covers: str = "each_class",
     ) -> None:
         self.estimator = estimator
         self.target_prior = target_prior
@@ -375,6 +378,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.tally_resolution = tally_resolution
         self.keep_heldout = keep_heldout
         self.predict_with = predict_with
+        self.interval_covers = interval_covers
 
     # -- parameters ------------------------------------------------------------------------------
     def _check_params(self) -> None:
@@ -386,6 +390,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             )
         if self.method not in PRIOR_METHODS:
             raise ValueError(f"`method` must be one of {PRIOR_METHODS}; got {plain(self.method)!r}.")
+        covers = getattr(self, "interval_covers", "each_class")
+        if not isinstance(covers, str) or covers not in _INTERVAL_COVERS:
+            raise ValueError(
+                f"`interval_covers` must be one of {_INTERVAL_COVERS}; got {plain(covers)!r}."
+            )
         if self.calibration not in CALIBRATIONS:
             raise ValueError(
                 f"`calibration` must be one of {CALIBRATIONS}; got {plain(self.calibration)!r}."
@@ -984,9 +993,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             for model, classes in models], self.classes_.shape[0])
 
     def _finish_adapt(self, res: Any, interval: Any) -> PriorShiftWrapper:
+        every = self._all_classes_interval(res, interval)
         self.prior_estimate_ = res
         self.target_prior_ = res.prior
-        self.target_prior_interval_ = interval
+        self.target_prior_interval_each_class_ = interval
+        self.target_prior_interval_all_classes_ = every
+        self.target_prior_interval_ = (
+            every if getattr(self, "interval_covers", "each_class") == "all_classes" else interval
+        )
+        interval = self.target_prior_interval_
         self.shift_pvalue_ = res.shift_pvalue
         self.shift_statistic_ = res.shift_statistic
         self.n_dropped_resamples_ = int(getattr(res, "n_dropped", 0))
@@ -1013,6 +1028,30 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 stacklevel=3,
             )
         return self
+
+    def _all_classes_interval(self, res: Any, interval: Any) -> Any:
+        """The interval that holds every class share at once (``interval_covers``): for two
+        classes the per-class interval itself (the two shares are one minus each other); for
+        more, ``res.all_shares_interval``, computed wherever the estimate's interval is (in
+        memory, and Dask or Spark rows up to 20,000 or read as sums). None without an
+        interval; a clear refusal where ``interval_covers="all_classes"`` asks for it on a path
+        that builds only the per-class interval (the Poisson bootstrap over tallied rows)."""
+        if interval is None:
+            return None
+        if self.classes_.shape[0] <= 2:
+            return interval
+        every = getattr(res, "all_shares_interval", None)
+        if every is None and getattr(self, "interval_covers", "each_class") == "all_classes":
+            raise ValueError(
+                "interval_covers='all_classes' is not available here: the labelled rows "
+                "(more than 20,000, with more than two classes and a method other than 'em' "
+                "or a bootstrap interval) are kept as a tally, and the Poisson bootstrap over "
+                "it builds only the per-class interval. Fit with keep_heldout=True, or with "
+                "method='em' and interval='score' (the defaults), or set "
+                "interval_covers='each_class' (each class share's interval then holds its "
+                "share one class at a time, not all at once)."
+            )
+        return every
 
     def _warn_uninformative(self, interval: Any, identified: bool) -> bool:
         """Warn when a class's interval spans all of [0, 1]: the data then say nothing about

@@ -427,8 +427,10 @@ def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.
     fitted before those were kept) one more pass for the delta-method interval's sums.
     ``moments`` replaces the labelled class moments (a refit base model: the labelled rows
     re-weighted so every fold holds its share, see ``_refit_folds``).
-    Returns ``(ml prior, interval widened to contain prior, ml interval)``."""
-    from ..shift._analytic import interval_from_sums, moment_prior_interval
+    Returns ``(ml prior, interval widened to contain prior, ml interval, interval of every
+    share at once widened to contain prior)`` (the last as in memory: the same interval at the
+    per-share level of ``all_shares_level``)."""
+    from ..shift._analytic import all_shares_level, interval_from_sums, moment_prior_interval
     from ..shift._resample import _widen
 
     src = est.source_prior_
@@ -436,17 +438,23 @@ def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.
     ml = _ml_prior(est, parts, prior, total)
     if moments is None:
         moments = getattr(est, "_class_scores", None)
+    k = src.shape[0]
+    level_all = all_shares_level(est.confidence_level, k)
     if moments is not None and target is not None:
         found = moment_prior_interval(target, moments, est.confidence_level)
-        k = src.shape[0]
         bounds = np.column_stack([np.zeros(k), np.ones(k)]) if found is None else found[0]
+        found = moment_prior_interval(target, moments, level_all)
+        joint = np.column_stack([np.zeros(k), np.ones(k)]) if found is None else found[0]
     else:
         sums = rows.map_reduce(_target_interval_sums, estimator, est.calibrator_, src, ml,
                                unit)
         bounds = interval_from_sums(sums, n_eff, ml, est._labelled_cov, est.confidence_level,
                                     est.n_source_effective_)[0]
+        joint = interval_from_sums(sums, n_eff, ml, est._labelled_cov, level_all,
+                                   est.n_source_effective_)[0]
     level = est.confidence_level
-    return ml, _widen(bounds, prior, ml, n_eff, level), _widen(bounds, ml, ml, n_eff, level)
+    return (ml, _widen(bounds, prior, ml, n_eff, level), _widen(bounds, ml, ml, n_eff, level),
+            _widen(joint, prior, ml, n_eff, level_all))
 
 
 def _ml_prior(est, parts, prior, total):
@@ -699,7 +707,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         test = _score_stat_moments((mean, cov, n_eff), _current_source_score(source_score), k,
                                     pooled=True, source_prior=src)
         stat, pvalue = test.statistic, test.pvalue
-        ml = ml_interval = interval = pseudo = None
+        ml = ml_interval = interval = pseudo = joint = None
         point = PriorEstimate(prior=prior, method=method, n_iter=n_iter, converged=converged,
                               n_rows=int(n_rows), distance=float(distance))
         if method == "em":
@@ -712,7 +720,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
                 and getattr(est, "_labelled_cov", None) is not None):
             t_mean = fsu / total
             target = (t_mean, fsuu / total - np.outer(t_mean, t_mean), n_eff)
-            ml, interval, ml_interval = _analytic_interval(
+            ml, interval, ml_interval, joint = _analytic_interval(
                 est, estimator, rows, e_parts, prior, e_total, n_eff, unit, target,
                 moments=None if refit is None else refit[1])
             if not est._within(prior, ml_interval):
@@ -767,6 +775,10 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         # as in memory: an interval that excludes the source shares while the test does not
         # reject is widened to reach them (PriorIntervalConflictWarning)
         interval, ml_interval = est._reconcile(np.asarray(interval), ml_interval, pvalue)
+    if joint is not None and interval is not None:
+        # as in memory: the interval of every share at once contains the per-share one
+        joint = np.column_stack([np.minimum(joint[:, 0], interval[:, 0]),
+                                 np.maximum(joint[:, 1], interval[:, 1])])
     return PriorEstimate(
         prior=prior,
         method=method,
@@ -781,4 +793,5 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         ml_prior=ml,
         ml_interval=ml_interval,
         pseudo_rows=pseudo,
+        all_shares_interval=joint,
     )

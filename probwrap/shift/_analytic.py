@@ -350,6 +350,39 @@ def moment_prior_interval(
     return share_interval(centre, cov, confidence_level, df=df), centre, cov, df
 
 
+def all_shares_level(confidence_level: float, k: int) -> float:
+    r"""Level of each class share's interval such that the ``k`` intervals together hold all
+    ``k`` shares at once with probability at least ``confidence_level``.
+
+    Bonferroni's inequality: if each of ``k`` intervals misses its share with probability at
+    most :math:`(1 - \text{level}) / k`, all of them hold at once with probability at least
+    ``level``, whatever the dependence between the shares (which sum to one, so they are
+    negatively correlated). For multinomial proportions this is Goodman's (1965) simultaneous
+    interval ("On simultaneous confidence intervals for multinomial proportions",
+    Technometrics 7, 247-254): the score (Wilson) interval of each proportion at the chi-square
+    (one degree of freedom) quantile :math:`\chi^2_{1,\,1 - (1 - \text{level})/k}` — the
+    ``method="goodman"`` of statsmodels' ``multinomial_proportions_confint``, which
+    :func:`share_interval` at this level reproduces on multinomial counts (tested). Šidák's
+    per-share level :math:`\text{level}^{1/k}` is narrower by a hair (0.98305 against 0.98333
+    for ``k = 3`` at 95 %); the projections of the chi-square(``k - 1``) Wald ellipsoid of the
+    free shares (Scheffé's method) are wider for the class counts met here (half-width
+    :math:`\sqrt{\chi^2_{2,\,0.95}} = 2.45` standard errors against Bonferroni's 2.39 for
+    ``k = 3``; 4.11 against 2.81 for ``k = 10``).
+
+    Examples
+    --------
+    >>> from probwrap.shift._analytic import all_shares_level
+    >>> round(all_shares_level(0.95, 4), 4)
+    0.9875
+    """
+    level = float(confidence_level)
+    if not 0.0 < level < 1.0:
+        raise ValueError(f"`confidence_level` must be in (0, 1); got {confidence_level!r}.")
+    if int(k) < 1:
+        raise ValueError(f"`k` must be a positive number of classes; got {k!r}.")
+    return 1.0 - (1.0 - level) / int(k)
+
+
 #: Shape of the per-share interval of :func:`share_interval` used by default.
 SHARE_INTERVAL_SHAPE = "wilson"
 

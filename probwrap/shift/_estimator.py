@@ -18,6 +18,7 @@ from sklearn.utils import check_random_state
 from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
 from ..calibration._base import rescale_extreme_weights
 from ._analytic import (
+    all_shares_level,
     analytic_prior_interval,
     class_score_moments,
     class_score_sums,
@@ -755,6 +756,10 @@ class PriorEstimator(_Resampling):
                 (ml - src)[1:], (u * (we / we.sum())[:, None]).T @ u, test.mean_cov, test.raw
             )
         bounds, dropped, ml_bounds = None, 0, None
+        # more than two classes: the interval that holds every class share at once
+        # (all_shares_level), built the same way at the per-share level that makes it joint
+        joint = None
+        level_all = all_shares_level(self.confidence_level, k)
         conflict = False  # the two-class score interval found no share consistent with the rows
         # the interval's floor (_widen): Kish's count of the unlabelled rows; with cells the
         # count whose binomial error equals the clustered error of the mean posterior, which is
@@ -773,6 +778,7 @@ class PriorEstimator(_Resampling):
             source = self._source_rows()
             if not point.identified:
                 bounds = np.column_stack([np.zeros(k), np.ones(k)])
+                joint = bounds.copy() if k > 2 else None
             elif getattr(self, "interval", "score") == "score" and k == 2 and source is not None:
                 (lo, hi), consistent = score_interval(
                     p, self.calibrate(source[0]), source[1], src, sample_weight=w,
@@ -818,6 +824,10 @@ class PriorEstimator(_Resampling):
                                               self.confidence_level)
                 bounds = (np.column_stack([np.zeros(k), np.ones(k)]) if found is None
                           else found[0])
+                found = moment_prior_interval((m_t, c_t, n_test), moments, level_all)
+                joint = (np.column_stack([np.zeros(k), np.ones(k)]) if found is None
+                         else found[0])
+                joint = _widen(joint, point.prior, ml, n_floor, level_all)
                 ml_bounds = _widen(bounds, ml, ml, n_floor, self.confidence_level)
                 bounds = _widen(bounds, point.prior, ml, n_floor, self.confidence_level)
             elif getattr(self, "interval", "score") == "score" and ml is not None and (
@@ -829,6 +839,10 @@ class PriorEstimator(_Resampling):
                     self.calibrator_, p_raw, w, n_eff, src, ml, self._eta_cov(),
                     self.confidence_level, n_source=n_src,
                 )[0]
+                joint = _widen(analytic_prior_interval(
+                    self.calibrator_, p_raw, w, n_eff, src, ml, self._eta_cov(),
+                    level_all, n_source=n_src,
+                )[0], point.prior, ml, n_eff, level_all)
                 ml_bounds = _widen(bounds, ml, ml, n_eff, self.confidence_level)
                 bounds = _widen(bounds, point.prior, ml, n_eff, self.confidence_level)
             else:
@@ -850,6 +864,9 @@ class PriorEstimator(_Resampling):
                     bounds, dropped = self._refit_bootstrap(
                         fold_proba, refit[0], share, w, n_eff, centre, check_random_state(rs),
                         cells=cell_t)
+                if k > 2:  # the same replicates at the per-share level of the joint interval
+                    joint = _widen(self._last_all_shares, point.prior, centre, n_floor,
+                                   level_all)
                 if ml is not None:
                     ml_bounds = _widen(bounds, ml, ml, n_floor, self.confidence_level)
                 bounds = _widen(bounds, point.prior, centre, n_floor, self.confidence_level)
@@ -874,6 +891,11 @@ class PriorEstimator(_Resampling):
                                 prior=point.prior, pseudo=pseudo, conflict=conflict)
         if k > 2 and bounds is not None and point.identified:
             bounds, ml_bounds = self._reconcile(bounds, ml_bounds, pvalue)
+        if joint is not None and bounds is not None:
+            # every widening of the per-share interval (the shrunk estimate kept inside, the
+            # source shares reached where the shift test accepts them) holds for the joint one
+            joint = np.column_stack([np.minimum(joint[:, 0], bounds[:, 0]),
+                                     np.maximum(joint[:, 1], bounds[:, 1])])
         return PriorEstimate(
             prior=point.prior,
             method=point.method,
@@ -891,6 +913,7 @@ class PriorEstimator(_Resampling):
             ml_interval=ml_bounds,
             pseudo_rows=pseudo,
             null_move_ratio=move_ratio,
+            all_shares_interval=joint,
         )
 
     @staticmethod

@@ -267,6 +267,17 @@ class _Resampling:
         bounds = _interval_from_draws(
             centre, draws, jack, self.confidence_level, dropped, B, k,
         )
+        # more than two classes: the same replicates at the per-share level that makes the k
+        # intervals hold every share at once (read by PriorEstimator.estimate)
+        self._last_all_shares = None
+        if k > 2:
+            from ._analytic import all_shares_level
+            from ._interval import bca_interval
+
+            self._last_all_shares = (
+                np.column_stack([np.zeros(k), np.ones(k)]) if draws.shape[0] == 0
+                else bca_interval(centre, draws, jack or None,
+                                  confidence_level=all_shares_level(self.confidence_level, k)))
         return bounds, dropped
 
     def _jackknife(
