@@ -227,6 +227,17 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         unless the refit spreads more than 1.1 times as widely as every fold model. Measured
         on 27-60 labelled rows in docs/prior_shift.md, "Which model predicts after
         cross-fitting" (since 4 December 2026; before, always the refit).
+    interval_covers : {"each_class", "all_classes"}, default="each_class"
+        What ``target_prior_interval_`` holds with more than two classes (both are always
+        stored, see the attributes). ``"each_class"``: each class share's interval holds that
+        share with probability ``confidence_level``, one class at a time; read together, all
+        of them hold less often (the more classes, the less: 89.6 % at 95 % on the multiclass
+        cells of the session-22 real-data hunt). ``"all_classes"``: intervals that hold every
+        class share at once with probability ``confidence_level``, for reading several shares
+        together: each built like the per-class one at the level ``1 - (1 - confidence_level)
+        / n_classes`` (Bonferroni; Goodman 1965 for multinomial proportions), about 1.2-1.4
+        times as wide for 3-10 classes. With two classes the two are the same (one share is
+        one minus the other). Measured in docs/prior_shift.md, "All class shares at once".
 
     Attributes
     ----------
@@ -266,7 +277,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         classes, which reads the refit model's tally and warns.
     target_prior_interval_ : ndarray of shape (n_classes, 2) or None
         Interval of the class priors of the ``adapt`` rows, carrying the error of both the
-        unlabelled and the labelled rows (set by ``adapt``; see ``interval``). With more than
+        unlabelled and the labelled rows (set by ``adapt``; see ``interval``):
+        ``target_prior_interval_each_class_`` (each row holds its class share one class at a
+        time; the default) or ``target_prior_interval_all_classes_`` (all rows hold every
+        share at once), as ``interval_covers`` says. With more than
         two classes, an interval that excludes ``source_prior_`` while the shift test does not
         reject at its level is widened to reach it, with a
         :class:`~probwrap.shift.PriorIntervalConflictWarning` (EM's estimate then moved
@@ -287,6 +301,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         20,000 labelled rows without ``keep_heldout=True`` (measured there: 1 draw in 100
         changed at most, no warning; docs/prior_shift.md, "A base model refit on the labelled
         rows").
+    target_prior_interval_each_class_ : ndarray of shape (n_classes, 2) or None
+        Per-class interval: row ``c`` holds the share of ``classes_[c]`` with probability
+        ``confidence_level`` — for that one class. For several classes read together, see
+        ``target_prior_interval_all_classes_`` (set by ``adapt``).
+    target_prior_interval_all_classes_ : ndarray of shape (n_classes, 2) or None
+        Intervals that hold the shares of *all* classes at once with probability
+        ``confidence_level`` (see ``interval_covers``); each contains the per-class interval.
+        With two classes the per-class interval itself. Built wherever the per-class interval
+        is, in memory and on Dask or Spark rows (set by ``adapt``).
     shift_pvalue_ : float
         p-value of the two-sample score test of "no shift" (the ``adapt`` rows against the
         labelled rows, whose class shares and calibration are themselves estimates; F
@@ -1033,9 +1056,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         """The interval that holds every class share at once (``interval_covers``): for two
         classes the per-class interval itself (the two shares are one minus each other); for
         more, ``res.all_shares_interval``, computed wherever the estimate's interval is (in
-        memory, and Dask or Spark rows up to 20,000 or read as sums). None without an
-        interval; a clear refusal where ``interval_covers="all_classes"`` asks for it on a path
-        that builds only the per-class interval (the Poisson bootstrap over tallied rows)."""
+        memory, and on Dask or Spark rows, whose multiclass intervals come from the same
+        moments or delta-method sums). None without an interval; a clear refusal where
+        ``interval_covers="all_classes"`` asks for it from an estimate that carries only the
+        per-class interval (the Poisson bootstrap over tallied rows, which this wrapper no
+        longer reaches with more than two classes; kept as a guard)."""
         if interval is None:
             return None
         if self.classes_.shape[0] <= 2:
@@ -1043,10 +1068,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         every = getattr(res, "all_shares_interval", None)
         if every is None and getattr(self, "interval_covers", "each_class") == "all_classes":
             raise ValueError(
-                "interval_covers='all_classes' is not available here: the labelled rows "
-                "(more than 20,000, with more than two classes and a method other than 'em' "
-                "or a bootstrap interval) are kept as a tally, and the Poisson bootstrap over "
-                "it builds only the per-class interval. Fit with keep_heldout=True, or with "
+                "interval_covers='all_classes' is not available for this adapt: its interval "
+                "of the class shares came from a path that builds only the per-class interval "
+                "(a Poisson bootstrap over tallied rows). Fit with keep_heldout=True, or with "
                 "method='em' and interval='score' (the defaults), or set "
                 "interval_covers='each_class' (each class share's interval then holds its "
                 "share one class at a time, not all at once)."

@@ -640,7 +640,10 @@ class PriorEstimator(_Resampling):
             the unpenalised estimate and widened to contain ``prior``; ``ml_interval`` is the
             same before that widening (the confidence interval of the class shares; for
             ``method="em"`` the shrunk ``prior`` is kept inside it, so the two agree).
-            ``shift_statistic`` and
+            ``interval`` holds each class share one class at a time; with more than two classes
+            ``all_shares_interval`` holds all of them at once (the same interval at the
+            per-share level :func:`probwrap.shift._analytic.all_shares_level`, containing
+            ``interval``). ``shift_statistic`` and
             ``shift_pvalue`` come from the two-sample score test
             (:func:`shift_score_test`), whatever ``method``. ``n_dropped`` counts resamples
             dropped because a class vanished from the labelled resample (a
