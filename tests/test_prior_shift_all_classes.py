@@ -207,3 +207,26 @@ def test_dask_rows_beyond_the_kept_limit_give_the_in_memory_all_classes_interval
                                rtol=0, atol=1e-9)
     every, each = mem.target_prior_interval_all_classes_, mem.target_prior_interval_each_class_
     assert np.sum(every[:, 1] - every[:, 0]) > 1.1 * np.sum(each[:, 1] - each[:, 0])
+
+
+@pytest.mark.slow
+@pytest.mark.filterwarnings("ignore:PySpark does not yet fully support pandas")
+@pytest.mark.filterwarnings("ignore:The copy keyword is deprecated")
+def test_spark_rows_give_the_in_memory_all_classes_interval(spark, tally_path):
+    # a Spark DataFrame of multiclass rows takes the same reductions as Dask beyond the kept
+    # limit (forced): both intervals equal adapt's in memory
+    pd = pytest.importorskip("pandas")
+    X, y = load_digits(return_X_y=True)
+    order = np.random.default_rng(1).permutation(y.shape[0])
+    model = LogisticRegression(C=1e-3, max_iter=2000).fit(X[order[:500]], y[order[:500]])
+    lab, new = order[500:1100], order[1100:1500]
+    psw = _quiet(lambda: PriorShiftWrapper(FrozenEstimator(model), random_state=0,
+                                           interval_covers="all_classes").fit(X[lab], y[lab]))
+    mem = _quiet(lambda: copy.deepcopy(psw).adapt(X[new]))
+    frame = spark.createDataFrame(pd.DataFrame(X[new], columns=[f"x{i}" for i in range(64)]))
+    remote = _quiet(lambda: copy.deepcopy(psw).adapt(frame))
+    assert remote.prior_estimate_.all_shares_interval is not None
+    np.testing.assert_allclose(remote.target_prior_interval_all_classes_,
+                               mem.target_prior_interval_all_classes_, rtol=0, atol=1e-6)
+    np.testing.assert_allclose(remote.target_prior_interval_each_class_,
+                               mem.target_prior_interval_each_class_, rtol=0, atol=1e-6)
