@@ -65,6 +65,7 @@ XDIST_GROUPS = {
     "tests/test_spark_user_messages.py::": "spark",
     "tests/test_spark_refit.py::": "spark",
     "tests/test_spark_driver_errors.py::": "spark",
+    "tests/test_spark_adapt_parity.py::": "spark",
 }
 
 

@@ -232,6 +232,9 @@ def test_large_multiclass_adapt_is_the_in_memory_adapt(digits, tally_path, kind)
     assert dist.adaptation_weight_ == pytest.approx(mem.adaptation_weight_, rel=1e-9)
     assert dist.prior_estimate_.null_harm_scale == pytest.approx(
         mem.prior_estimate_.null_harm_scale, rel=1e-9)
+    # the NoShiftHarmWarning's ratio from the same sums (None here before 4 December 2026)
+    assert dist.prior_estimate_.null_move_ratio == pytest.approx(
+        mem.prior_estimate_.null_move_ratio, rel=1e-9)
     if mem.prior_estimate_.ml_prior is not None:
         np.testing.assert_allclose(dist.prior_estimate_.ml_prior, mem.prior_estimate_.ml_prior,
                                    rtol=1e-9, atol=1e-12)

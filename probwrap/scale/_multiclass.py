@@ -697,6 +697,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
             _null_harm_scale_moments,
             _score_stat_moments,
             estimate_amplification,
+            null_move_ratio,
         )
 
         # the shift test (before the interval: where the data reject the shrunk estimate, the
@@ -765,6 +766,9 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         loss = min(loss, float(reference))
     harm_scale = _null_harm_scale_moments(h_mean / total, h_suu / total, loss, src,
                                           test.mean_cov)
+    # the first- over second-order harm of a move on rows whose shares did not change (the
+    # NoShiftHarmWarning's input), from the same sums, as in memory (PriorEstimator.estimate)
+    move_ratio = null_move_ratio(h_mean / total, h_suu / total, src, test.mean_cov)
     if ml is not None and harm_scale:
         # as in memory: the applied move is a share of EM's estimate, which can lie far beyond
         # the one-step estimate the harm bound assumes (J = the weighted mean of u u' over the
@@ -790,6 +794,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         shift_pvalue=pvalue,
         distance=float(distance),
         null_harm_scale=harm_scale,
+        null_move_ratio=move_ratio,
         ml_prior=ml,
         ml_interval=ml_interval,
         pseudo_rows=pseudo,
