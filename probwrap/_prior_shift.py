@@ -273,8 +273,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         2026; on R's ggplot2 diamonds with gradient boosting at 2,000 labelled rows the mean
         estimate moved from 0.180 to 0.200 for a true 0.2). More than 20,000 Dask or Spark
         ``adapt`` rows read them too, where the rows live (docs/scale.md, "A base model refit
-        in memory, then Dask or Spark rows"), except under a bootstrap interval on two
-        classes, which reads the refit model's tally and warns.
+        in memory, then Dask or Spark rows"), under a bootstrap interval too (since a later
+        change the same day; before, that read the refit model's tally and warned).
     target_prior_interval_ : ndarray of shape (n_classes, 2) or None
         Interval of the class priors of the ``adapt`` rows, carrying the error of both the
         unlabelled and the labelled rows (set by ``adapt``; see ``interval``):
@@ -294,10 +294,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         The bootstrap intervals (and more than two classes with a method other than
         ``"em"``) resample the fold models' posteriors of the ``adapt`` rows instead of the
         refit model's, so they carry it too (since 4 December 2026: digits "is an 8", BCa,
-        85.0 % -> 94.5 % at 95 %). Not carried: a bootstrap interval on more than 20,000
-        two-class Dask or Spark rows (replicates of a tally of the refit model's score; warns;
-        their score interval reads the fold models' scores as sums on a grid of priors since
-        4 December 2026, docs/scale.md); more than
+        85.0 % -> 94.5 % at 95 %). More than 20,000 two-class Dask or Spark rows carry it as
+        well: the score interval reads the fold models' scores as sums on a grid of priors, a
+        bootstrap interval Poisson replicates of the rows once per fold model (one draw per
+        row, shared by its copies), both taken where the rows live (4 December 2026; before,
+        the bootstrap one drew from the refit model's tally and warned; docs/scale.md). Not
+        carried: more than
         20,000 labelled rows without ``keep_heldout=True`` (measured there: 1 draw in 100
         changed at most, no warning; docs/prior_shift.md, "A base model refit on the labelled
         rows").
@@ -892,9 +894,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 self.estimator_, X, sample_weight, n_replicates=est.n_resamples,
                 random_state=rs, resolution=owner_resolution(self), folds=self._fold_scorer(),
                 # more rows: the fold models' scores as sums for the score interval and test,
-                # and as a tally of every row once per fold model for the estimate (unless a
-                # bootstrap interval draws from the refit model's tally: then all read it)
-                moments_of=est if self.interval == "score" or est.n_resamples == 0 else None,
+                # and as a tally of every row once per fold model for the estimate; a
+                # bootstrap interval draws Poisson replicates of that tally in the same pass
+                # (one draw per row, shared by its fold copies; since 4 December 2026, before
+                # it drew from the refit model's tally and everything read that)
+                moments_of=est,
+                fold_replicates=0 if self.interval == "score" else int(est.n_resamples),
                 cells=cells is not None,
             )
         else:
@@ -909,11 +914,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
             self.interval == "score" and not multiclass
         )
-        self._warn_refit_left_out(None if poisson else folds)
+        self._warn_refit_left_out(
+            folds if (not poisson or getattr(folds, "row_replicates", None) is not None)
+            else None)
         if poisson:
-            # Some rows are tallied: one Poisson bootstrap over tallied and in-memory rows alike.
+            # Some rows are tallied: one Poisson bootstrap over tallied and in-memory rows alike
+            # (after a refit, over the rows once per fold model, with their replicates)
             res, interval = tallied_adapt(est, source, target, proba, sample_weight, rs,
-                                          self.classes_.shape[0])
+                                          self.classes_.shape[0], folds=folds)
         else:
             rows = None if target is None else _tally_rows(target)
             res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
@@ -950,16 +958,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
     def _warn_refit_left_out(self, folds: Any) -> None:
         """Warn when the base model was refit here and its labelled rows are kept, but the
-        unlabelled rows' interval cannot read the fold models: a bootstrap interval (``"bca"``,
-        ``"percentile"``) on more than 20,000 two-class Dask or Spark rows, which is drawn
-        from Poisson replicates of the tally of the refit model's score (the score interval
-        there reads the fold models' scores as sums taken where the rows live, since 4
-        December 2026). The interval then leaves out how much the refit moves with the
-        labelled draw. Every interval on rows in memory, on a small Dask or Spark set, and on
-        Dask or Spark rows of more than two classes reads the fold models, so it does not
-        warn. On those rows the estimate and the shift test read the refit model's tally too
-        (with the score interval, or no interval, they read the fold models as in memory), and
-        the warning says so."""
+        unlabelled rows' bootstrap interval could not read the fold models (``folds`` None on
+        the Poisson-bootstrap path over a tally of the refit model's score). The interval then
+        leaves out how much the refit moves with the labelled draw. Since 4 December 2026 every
+        interval reads the fold models: on rows in memory, on a small Dask or Spark set, on
+        Dask or Spark rows of more than two classes, and, beyond 20,000 two-class Dask or
+        Spark rows, the score interval from the fold-score sums and a bootstrap interval from
+        Poisson replicates of the rows once per fold model, taken in the same pass; so this
+        is a guard for a case the fold models cannot serve, and it says what differs."""
         if (folds is not None or not getattr(self, "_refit_here", False)
                 or getattr(self.prior_estimator_, "_src_fold", None) is None
                 or self.prior_estimator_.n_resamples == 0):
@@ -969,16 +975,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             "(Dask or Spark) enter this interval through the refit model's scores only, so it "
             "does not carry how much that refit moves with the draw of the labelled rows; with a "
             "high-variance model on a few hundred rows it can cover several points less than "
-            "its level (docs/prior_shift.md, 'A base model refit on the labelled rows'). It is "
-            "carried by every interval except a bootstrap one (interval='bca' or "
-            "'percentile') on more than 20,000 rows of two classes, whose replicates are "
-            "drawn from a tally of the refit model's score that the fold models' scores of "
-            "each row cannot join. There the estimate (target_prior_) and the shift test read "
-            "that tally too, not every row once per fold model as adapt on the same rows in "
-            "memory does, so they differ from the in-memory result (by about 0.003 in the "
-            "positive share on breast cancer; docs/scale.md, 'A base model refit in memory, "
-            "then Dask or Spark rows'): use interval='score' (the default) there, which "
-            "matches memory, or fit the base model elsewhere and pass it frozen.",
+            "its level (docs/prior_shift.md, 'A base model refit on the labelled rows'). The "
+            "estimate (target_prior_) and the shift test read the refit model's scores too, "
+            "not every row once per fold model as adapt on the same rows in memory does "
+            "(docs/scale.md, 'A base model refit in memory, then Dask or Spark rows'). Fit the "
+            "base model elsewhere and pass it frozen, or collect the rows.",
             UserWarning,
             stacklevel=3,
         )

@@ -34,23 +34,42 @@ def _tally_rows(tally: Any) -> float:
 
 
 def tallied_adapt(
-    est: Any, source: Any, target: Any, proba: Any, sample_weight: Any, rs: Any, k: int
+    est: Any, source: Any, target: Any, proba: Any, sample_weight: Any, rs: Any, k: int,
+    folds: Any = None,
 ) -> tuple:
     """``adapt``'s estimate and interval when the labelled (``source``) or unlabelled
-    (``target``) rows are tallies; returns ``(PriorEstimate, interval)``."""
+    (``target``) rows are tallies; returns ``(PriorEstimate, interval)``.
+
+    ``folds``: the fold-score sums of more than 20,000 two-class Dask or Spark rows after a
+    base model was refit on the labelled rows
+    (:class:`probwrap.shift._fold_moments.FoldScoreMoments` with ``row_replicates``). The
+    estimate and the shift test then read them as with the score interval, and the bootstrap
+    redraws the rows the estimate reads (every row once per fold model, one Poisson draw per
+    row shared by its copies), as the in-memory bootstrap after a refit does
+    (``PriorEstimator._refit_bootstrap``; since 4 December 2026, before the refit model's
+    tally)."""
     from .scale._entry import replicate_seed, tally_prior_interval
 
     rows = None if target is None else _tally_rows(target)
+    fold_rows = None
+    if folds is not None and getattr(folds, "row_replicates", None) is not None:
+        fold_rows = folds.rows
     res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
-                       interval=False)
+                       interval=False, fold_proba=None if fold_rows is None else folds)
     w = check_sample_weight(sample_weight, np.asarray(proba).shape[0])
     centre = res.ml_prior if res.ml_prior is not None else res.prior
+    if fold_rows is not None:
+        # the rows the estimate read (each row once per fold model), for the interval and
+        # the fade below, as in memory
+        proba, sample_weight = fold_rows
+        w = np.asarray(sample_weight, dtype=float)
     if res.identified:
         # the same shortfall with few labelled rows as the in-memory interval's
         est._warn_few_labelled(getattr(est, "n_source_effective_", None))
         interval = tally_prior_interval(
             est, source, np.asarray(proba, dtype=float), w, target, centre,
             n_replicates=est.n_resamples, seed=replicate_seed(rs),
+            target_replicates=None if fold_rows is None else folds.row_replicates,
         )
         n_eff = rows if rows is not None else float(w.sum() ** 2 / np.dot(w, w))
         ml_interval = (None if res.ml_prior is None else

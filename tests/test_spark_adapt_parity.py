@@ -37,16 +37,17 @@ def _adapted(psw, X):
 
 
 def test_large_multiclass_spark_warns_of_no_shift_harm_as_in_memory(spark, tally_path):
-    # digits, pixel columns 20-29, a frozen Gaussian naive Bayes; thirds at random (seed 7):
-    # 599 labelled and 599 unlabelled rows with no shift. In memory p = 0.13, a third of the
-    # move applied, predicted no-shift harm 4.2 %: NoShiftHarmWarning. Before 4 December 2026
-    # the multiclass Spark sums did not give null_move_ratio and never warned
+    # digits 0, 1 and 2, pixel columns 20-29, a frozen Gaussian naive Bayes; thirds at random
+    # (seed 5): 179 labelled and 179 unlabelled rows with no shift. In memory p = 0.22, 35 % of
+    # the move applied, predicted no-shift harm 5.3 %: NoShiftHarmWarning. Before 4 December
+    # 2026 the multiclass Spark sums did not give null_move_ratio and never warned
     X, y = load_digits(return_X_y=True)
-    X = X[:, 20:30]
-    a, b, c = np.array_split(np.random.default_rng(7).permutation(y.shape[0]), 3)
+    X, y = X[y < 3][:, 20:30], y[y < 3]
+    a, b, c = np.array_split(np.random.default_rng(5).permutation(y.shape[0]), 3)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        psw = PriorShiftWrapper(FrozenEstimator(GaussianNB().fit(X[a], y[a])),
+        # (no interval: fewer Spark jobs; the warning does not read it)
+        psw = PriorShiftWrapper(FrozenEstimator(GaussianNB().fit(X[a], y[a])), n_resamples=0,
                                 random_state=0).fit(X[b], y[b])
     mem, caught = _adapted(psw, X[c])
     frame = spark.createDataFrame(pd.DataFrame(X[c])).coalesce(1)
@@ -58,3 +59,43 @@ def test_large_multiclass_spark_warns_of_no_shift_harm_as_in_memory(spark, tally
         mem.prior_estimate_.null_harm_scale, rel=1e-10)
     assert len(dist_caught) == len(caught) == 1
     assert dist_caught[0] == caught[0]
+
+
+def test_large_binary_spark_bootstrap_reads_the_fold_models(spark, tally_path):
+    # a base model refit on 250 labelled breast-cancer rows (3 folds), a percentile bootstrap
+    # interval, 300 unlabelled rows forced onto the tally path: the pass on the executors that
+    # tallies every row once per fold model also draws that tally's Poisson replicates (one
+    # draw per row, shared by its fold copies), so the estimate and the shift test are
+    # memory's and the interval is memory's up to the bootstrap's noise. Before 4 December
+    # 2026 they read the refit model's tally, with a warning (0.2658 against 0.2687)
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    X, y = load_breast_cancer(return_X_y=True)
+    y = (y == 0).astype(int)
+    rng = np.random.default_rng(3)
+    order = rng.permutation(y.shape[0])
+    lab, pool = order[:250], order[250:]
+    cls = (rng.uniform(size=300) < 0.2).astype(int)
+    rows = np.where(cls == 1, rng.choice(pool[y[pool] == 1], 300),
+                    rng.choice(pool[y[pool] == 0], 300))
+    X_new = pd.DataFrame(X[rows] + rng.normal(0, 0.01, (300, X.shape[1])) * X.std(0),
+                         columns=[f"x{j}" for j in range(X.shape[1])])
+    model = make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        boot = PriorShiftWrapper(model, cv=3, interval="percentile", n_resamples=200,
+                                 random_state=0).fit(
+            pd.DataFrame(X[lab], columns=X_new.columns), y[lab])
+        mem = copy.deepcopy(boot).adapt(X_new)
+    frame = spark.createDataFrame(X_new).coalesce(1)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        dist = copy.deepcopy(boot).adapt(frame)
+    assert not [w for w in caught if "refit" in str(w.message)]
+    np.testing.assert_allclose(dist.target_prior_, mem.target_prior_, rtol=1e-6, atol=0)
+    assert dist.shift_statistic_ == pytest.approx(mem.shift_statistic_, rel=1e-9)
+    (lo_m, hi_m), (lo_d, hi_d) = mem.target_prior_interval_[1], dist.target_prior_interval_[1]
+    assert abs(lo_d - lo_m) < 0.2 * (hi_m - lo_m) and abs(hi_d - hi_m) < 0.2 * (hi_m - lo_m)

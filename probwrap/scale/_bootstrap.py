@@ -175,6 +175,7 @@ def tally_prior_interval(
     *,
     n_replicates: int,
     seed: int,
+    target_replicates: np.ndarray | None = None,
 ) -> np.ndarray:
     """Poisson-bootstrap interval of a target prior, with tally replicates where rows are binned.
 
@@ -190,7 +191,10 @@ def tally_prior_interval(
     interval is the bias-corrected percentile interval (BCa without acceleration: a tally's
     bins are not rows, so there is no row jackknife). Replicates in which a class vanished
     from the labelled rows are dropped, counted in ``estimator._last_dropped`` and reported
-    by a warning. Returns shape (k, 2).
+    by a warning. ``target_replicates`` (shape (B', m), instead of ``target``): the replicate
+    weights of the unlabelled rows ``target_proba`` drawn elsewhere (the rows once per fold
+    model of a base model refit on the labelled rows, ``FoldScoreMoments.row_replicates``).
+    Returns shape (k, 2).
     """
     from ..shift._estimator import _interval_from_draws
 
@@ -203,7 +207,10 @@ def tally_prior_interval(
         src_draw = src_reps.__getitem__
     else:
         src_draw = _row_replicates(sw_rows, B, [seed, 2], estimator._source_row_counts())
-    if target is not None:
+    if target_replicates is not None:
+        B = min(B, int(np.shape(target_replicates)[0]))
+        tgt_draw = np.asarray(target_replicates, dtype=float).__getitem__
+    elif target is not None:
         B = min(B, target.n_replicates)
         tgt_draw = target.replicate_bin_weights().__getitem__
     else:
@@ -217,6 +224,10 @@ def tally_prior_interval(
         np.asarray(target_proba, dtype=float), src_draw, tgt_draw, B, np.asarray(prior, float)
     )
     estimator._last_dropped = dropped
+    # "percentile": the draws' quantiles, as in memory; "bca": bias-corrected (a tally's bins
+    # are not rows, so no jackknife for the acceleration)
+    percentile = getattr(estimator, "interval", "bca") == "percentile"
     return _interval_from_draws(
-        np.asarray(prior, dtype=float), draws, [], estimator.confidence_level, dropped, B, k
+        np.asarray(prior, dtype=float), draws, None if percentile else [],
+        estimator.confidence_level, dropped, B, k
     )

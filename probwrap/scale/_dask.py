@@ -163,9 +163,14 @@ class DaskRows:
             ys = _aligned_blocks(y, "y", X, blocks, lengths)
             self._pieces = [t for t in zip(blocks, ys, ws, strict=True)]
 
-    def map_reduce(self, fn: Any, *args: Any) -> Any:
+    def map_reduce(self, fn: Any, *args: Any, indexed: bool = False) -> Any:
+        """The sum (``_combine``) of ``fn(*args, *block)`` over the blocks; with ``indexed``
+        ``fn(*args, key, *block)``, ``key`` the block's index as a list (``[i]``: a seed for
+        draws that depend on the block, not on where it runs; Spark's key is
+        ``[partition, chunk]``)."""
         call = self._dask.delayed(fn, pure=True)
-        parts = [call(*args, *piece) for piece in self._pieces]
+        parts = [call(*args, *([[i]] if indexed else []), *piece)
+                 for i, piece in enumerate(self._pieces)]
         return _tree_merge(self._dask, parts).compute()
 
     def persist(self, make: Any, *args: Any) -> DaskBlocks:

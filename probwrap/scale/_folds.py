@@ -101,7 +101,7 @@ def scored_rows(rows: Any, scorer: FoldScorer, unit: float = 1.0) -> tuple:
 
 def _fold_moments_block(scorer: FoldScorer, calibrator: Any, src: np.ndarray, share: np.ndarray,
                         grid: np.ndarray, unit: float, resolution: float, averaged: bool,
-                        Xb: Any, wb: Any) -> tuple:
+                        n_replicates: int, seed: int, key: list, Xb: Any, wb: Any) -> tuple:
     """Sums of the fold-averaged score of one block of unlabelled two-class rows on the grid of
     priors (:func:`probwrap.shift._fold_moments.fold_score_block`), the fold models' posteriors
     calibrated by the wrapper's map as in memory (``PriorEstimator.calibrate``); and, from the
@@ -110,7 +110,11 @@ def _fold_moments_block(scorer: FoldScorer, calibrator: Any, src: np.ndarray, sh
     ``PriorEstimator._estimating_rows``), in bins of ``resolution``; with ``averaged`` (the
     wrapper predicts with the fold models' average posterior) the weighted sums of that
     average, of the outer products of its shift-test scores and of its entropy (the harm
-    scale's inputs, as ``null_harm_scale`` reads them in memory)."""
+    scale's inputs, as ``null_harm_scale`` reads them in memory). With ``n_replicates`` the
+    tally carries that many Poisson-bootstrap replicates, drawn from
+    ``default_rng([seed, 4, *key])`` (``key`` the block's index), one draw per row shared by
+    its copies (a resampled row enters with every fold model, as the in-memory bootstrap after
+    a refit draws it, ``PriorEstimator._bootstrap`` with ``copies``)."""
     from ..shift._fold_moments import fold_score_block
     from ._dask import _binary_scores
     from ._tally import _tally_block
@@ -125,7 +129,11 @@ def _fold_moments_block(scorer: FoldScorer, calibrator: Any, src: np.ndarray, sh
               else np.empty(0))
     stacked = np.concatenate([s_k * w for s_k in share]) if n else np.empty(0)
     # (a row of weight 0 stays out of every sum, as in memory)
-    tally = _tally_block(scores, None, stacked, 1, resolution)
+    n_folds = raw.shape[0]
+    tally = _tally_block(scores, None, stacked, 1, resolution, int(n_replicates),
+                         [int(seed), 4, *key] if n_replicates else None,
+                         replicate_rows=np.tile(np.arange(n), n_folds) if n_replicates and n
+                         else None)
     harm: tuple = ()  # (sums combine entry by entry: none here)
     if averaged:
         avg = np.tensordot(share, cal, axes=1)
@@ -138,7 +146,7 @@ def _fold_moments_block(scorer: FoldScorer, calibrator: Any, src: np.ndarray, sh
 
 
 def fold_moments(rows: Any, scorer: FoldScorer, est: Any, unit: float = 1.0,
-                 resolution: float | None = None) -> Any:
+                 resolution: float | None = None, n_replicates: int = 0, seed: int = 0) -> Any:
     """The sums of the fold-averaged score of many unlabelled two-class rows (Dask or Spark
     rows, see :func:`probwrap.scale._rows.rows_of`), for the shift test and the score interval
     of ``est`` (a fitted :class:`probwrap.shift.PriorEstimator` whose labelled rows are kept
@@ -149,7 +157,11 @@ def fold_moments(rows: Any, scorer: FoldScorer, est: Any, unit: float = 1.0,
     share (bins of ``resolution`` on the log-odds scale, the tally's default if None), and the
     returned sums carry that tally's rows (``FoldScoreMoments.rows``): the rows the in-memory
     point estimate reads after a refit, each row once per fold model (since 4 December 2026;
-    before, the point estimate of these rows read the refit model's tally)."""
+    before, the point estimate of these rows read the refit model's tally). With
+    ``n_replicates`` that tally also carries Poisson-bootstrap replicates (one draw per row,
+    shared by its fold copies), returned as ``FoldScoreMoments.row_replicates``: the bootstrap
+    interval then redraws the rows the estimate reads, as in memory (since 4 December 2026;
+    before, it drew from the refit model's tally)."""
     from ..shift._fold_moments import score_grid
     from ..shift._interval import fold_shares
     from ._tally import DEFAULT_RESOLUTION
@@ -165,7 +177,9 @@ def fold_moments(rows: Any, scorer: FoldScorer, est: Any, unit: float = 1.0,
     averaged = bool(getattr(est, "_fold_point", False))
     sums, tally, harm = rows.map_reduce(_fold_moments_block, rows.shared(scorer),
                                         est.calibrator_, src, share, score_grid(float(src[1])),
-                                        float(unit), r, averaged)
+                                        float(unit), r, averaged, int(n_replicates), int(seed),
+                                        indexed=True)
     harm = None if not harm else (harm[0] / sums.total, harm[1] / sums.total,
                                   float(harm[2][0]) / sums.total)
-    return sums.with_rows(*tally.to_scores(proba=True), harm=harm)
+    return sums.with_rows(*tally.to_scores(proba=True), harm=harm,
+                          replicates=tally.replicate_bin_weights() if n_replicates else None)

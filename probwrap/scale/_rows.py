@@ -196,6 +196,7 @@ def unlabelled_proba_from_rows(
     folds: Any = None,
     moments_of: Any = None,
     cells: bool = False,
+    fold_replicates: int = 0,
 ):
     """Binary posteriors of unlabelled Dask or Spark rows as tally rows:
     ``(proba (m, 2), weights, tally, fold posteriors)``.
@@ -213,7 +214,11 @@ def unlabelled_proba_from_rows(
     A larger set with ``folds`` and ``moments_of`` (the wrapper's fitted
     :class:`~probwrap.shift.PriorEstimator`, for its score interval): one more pass sums the
     fold-averaged score on a grid of priors where the rows live
-    (:class:`probwrap.shift._fold_moments.FoldScoreMoments`, the last entry then).
+    (:class:`probwrap.shift._fold_moments.FoldScoreMoments`, the last entry then); with
+    ``fold_replicates`` the same pass draws that many Poisson-bootstrap replicates of the rows
+    it tallies once per fold model (one draw per row, shared by its copies; seeded by
+    ``random_state`` and the block), for a bootstrap interval
+    (``FoldScoreMoments.row_replicates``).
 
     ``cells`` (the caller has cells for the rows, ``adapt(cells=...)``): a set beyond
     ``KEPT_ROWS`` rows is refused after the tally (:func:`refuse_cells`).
@@ -257,5 +262,6 @@ def unlabelled_proba_from_rows(
         from ._folds import fold_moments
 
         moments = fold_moments(rows_of(X, None, sample_weight, estimator), folds, moments_of,
-                               tally.weight_unit, resolution)
+                               tally.weight_unit, resolution, n_replicates=int(fold_replicates),
+                               seed=replicate_seed(random_state) if fold_replicates else 0)
     return proba, w, tally, moments

@@ -725,20 +725,25 @@ class SparkRows:
         self._columns = [*features, *named_cols]
         self._split = (features, named, label, weight)
 
-    def map_reduce(self, fn: Any, *args: Any) -> Any:
+    def map_reduce(self, fn: Any, *args: Any, indexed: bool = False) -> Any:
+        """The sum (``_combine``) of ``fn(*args, *chunk)`` over the partitions' chunks of
+        rows, in partition order; with ``indexed`` ``fn(*args, key, *chunk)``, ``key`` the
+        chunk's ``[partition, chunk]`` (a seed for draws that depend on the partitioning, not
+        on scheduling, as the tallies' replicates; see ``DaskRows.map_reduce``)."""
         from ._tally import kept_rows_limit
 
         limit = kept_rows_limit()
         share = _kept_rows_share(self._frame)
-        out, dropped = self._map_reduce(share, fn, args)
+        out, dropped = self._map_reduce(share, fn, args, indexed)
         if dropped and getattr(out, "n", limit + 1) <= limit and share < limit:
             # a small set's rows left out by partitions holding more than their share (rows
             # spread unevenly, or Spark Connect): the total is now known to be small, so a
             # second pass sends them all (see _tally_partitions)
-            out, _ = self._map_reduce(limit, fn, args)
+            out, _ = self._map_reduce(limit, fn, args, indexed)
         return out
 
-    def _map_reduce(self, share: int, fn: Any, args: tuple) -> tuple[Any, bool]:
+    def _map_reduce(self, share: int, fn: Any, args: tuple,
+                    indexed: bool = False) -> tuple[Any, bool]:
         """The combined result, and whether a partition left out its rows (more than
         ``share``; results with ``without_rows_beyond`` only)."""
         import pandas as pd
@@ -750,8 +755,10 @@ class SparkRows:
             total = None
             try:
                 f, a = shared.value
-                for pdf in _chunks(batches, CHUNK_ROWS):
-                    r = f(*a, *_split(*spec, pdf))
+                part = _partition_id()
+                for j, pdf in enumerate(_chunks(batches, CHUNK_ROWS)):
+                    key = [[part, j]] if indexed else []
+                    r = f(*a, *key, *_split(*spec, pdf))
                     total = r if total is None else _combine(total, r)
             except Exception as exc:  # noqa: BLE001 - raised on the driver (see _WorkerError)
                 yield pd.DataFrame({"partition": [_partition_id()], "value": [_failure(exc)],

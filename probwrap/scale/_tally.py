@@ -589,6 +589,7 @@ def _tally_block(
     n_replicates: int = 0,
     seed: Any = None,
     outputs: Any = None,
+    replicate_rows: Any = None,
 ) -> ScoreTally:
     """Tally of one in-memory block (validated).
 
@@ -599,6 +600,9 @@ def _tally_block(
     With ``n_replicates > 0`` it also holds Poisson-bootstrap replicate counts; the Poisson(1)
     draws of the block's rows come from ``numpy.random.default_rng(seed)``, so they depend only
     on ``seed`` (the caller puts the block index into it), not on where the block is tallied.
+    ``replicate_rows`` (int array of shape (n,), codes ``0 .. r - 1``): the entries are
+    ``r`` original rows, several entries each (a row scored by several fold models); one
+    Poisson(1) draw per original row, shared by its entries (None: one draw per entry).
     """
     # an empty block (an empty Dask partition) gives an empty tally; check_scores refuses it
     s = np.asarray(scores, dtype=float) if len(scores) == 0 else check_scores(scores, name="scores")
@@ -677,8 +681,11 @@ def _tally_block(
         rng = np.random.default_rng(seed)
         cell = idx * cols + labels_of
         reps = np.empty((n_replicates, int(occupied.sum()), cols))
+        group = None if replicate_rows is None else np.asarray(replicate_rows, dtype=np.int64)
+        n_draws = n if group is None else int(group.max()) + 1
         for b in range(n_replicates):  # one replicate at a time: memory O(n + m), not O(B n)
-            wb = w * rng.poisson(1.0, size=n)
+            draw = rng.poisson(1.0, size=n_draws)
+            wb = w * (draw if group is None else draw[group])
             reps[b] = np.bincount(cell, weights=wb, minlength=m * cols).reshape(m, cols)[occupied]
     # rows of each label (unit weights: the weighted counts themselves), and those of them with
     # a positive weight (all of them unless some weight is 0)

@@ -80,13 +80,16 @@ class FoldScoreMoments:
         #: ``(mean posterior (2,), mean of u u' (1, 1), mean entropy)`` of the fold models'
         #: average posterior (the wrapper predicts with it), for the harm scale; or None
         self.harm: tuple | None = None
+        #: ``(B, m)``: Poisson-bootstrap replicate weights of :attr:`rows` (each original row
+        #: one draw, shared by its fold copies), for a bootstrap interval; or None
+        self.row_replicates: np.ndarray | None = None
 
     def __add__(self, other: FoldScoreMoments) -> FoldScoreMoments:
         return FoldScoreMoments(self.grid, self.total + other.total, self.s1 + other.s1,
                                 self.s2 + other.s2, self.n_folds)
 
-    def with_rows(self, proba: Any, weights: Any, harm: tuple | None = None
-                  ) -> FoldScoreMoments:
+    def with_rows(self, proba: Any, weights: Any, harm: tuple | None = None,
+                  replicates: Any = None) -> FoldScoreMoments:
         """These sums with the rows the point estimate reads after a refit (``rows``): the
         fold models' raw posteriors ``proba`` (m, 2) of the unlabelled rows, each row once
         per fold model, with ``weights`` (m,) the row's weight times the fold's share (only
@@ -94,17 +97,19 @@ class FoldScoreMoments:
         as ``PriorEstimator.estimate`` reads every row once per fold model in memory.
         ``harm``: the weighted means of the fold models' average posterior, of the outer
         products of its scores at the source prior and of its entropy, when that average
-        predicts (the harm scale reads them; see :attr:`harm`)."""
+        predicts (the harm scale reads them; see :attr:`harm`). ``replicates``: the rows'
+        Poisson-bootstrap replicate weights, shape (B, m) (:attr:`row_replicates`)."""
         out = FoldScoreMoments(self.grid, self.total, self.s1, self.s2, self.n_folds)
         out.rows = (np.asarray(proba, dtype=float), np.asarray(weights, dtype=float))
         out.harm = harm
+        out.row_replicates = None if replicates is None else np.asarray(replicates, dtype=float)
         return out
 
     def scaled(self, unit: float) -> FoldScoreMoments:
         """The same sums with the weights divided by ``unit`` (means do not change)."""
         out = FoldScoreMoments(self.grid, self.total / unit, self.s1 / unit, self.s2 / unit,
                                self.n_folds)
-        out.rows, out.harm = self.rows, self.harm
+        out.rows, out.harm, out.row_replicates = self.rows, self.harm, self.row_replicates
         return out
 
     def _interpolators(self) -> tuple:
