@@ -838,11 +838,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         cells : array-like of shape (n,), default=None
             The cell of every row (rows of one aggregated group share one): the shift test and
             the interval then count each cell as one unit, as ``fit(cells=...)`` does for the
-            labelled rows (docs/prior_shift.md, "Counts (k of n)"). Rows in memory, or at
-            most 20,000 Dask rows (a Dask or NumPy array in the rows' order), whose rows come
-            to the client and are estimated as in memory (since 4 December 2026); refused with
-            a Spark DataFrame, beyond 20,000 Dask rows, and after a fit on more than 20,000
-            Dask or Spark rows (docs/scale.md, "Limits of the Dask path").
+            labelled rows (docs/prior_shift.md, "Counts (k of n)"). Rows in memory, at most
+            20,000 Dask rows (a Dask or NumPy array in the rows' order) or at most 20,000 rows
+            of a Spark DataFrame (the name of its cells column), whose rows come to the client
+            and are estimated as in memory (since 4 December 2026); refused beyond 20,000 Dask
+            or Spark rows and after a fit on more than 20,000 Dask or Spark rows
+            (docs/scale.md, "Limits of the Dask path").
 
         Returns
         -------
@@ -869,6 +870,21 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         multiclass = self.classes_.shape[0] > 2
         if cells is not None:
             cells = self._dask_cells(X, sample_weight, cells, source)
+        if isinstance(cells, str) and _is_dask(X) and not hasattr(X, "__dask_graph__"):
+            # a Spark frame's cells column: at most 20,000 rows come to the client with their
+            # cells (and fold posteriors) from one pass, and adapt runs as in memory
+            from .scale._entry import spark_cells_rows
+
+            proba, folds, sample_weight, cells = spark_cells_rows(
+                self.estimator_, X, sample_weight, cells, self._fold_scorer(),
+                self.classes_.shape[0])
+            if sample_weight is not None:
+                sample_weight = rescale_extreme_weights(
+                    check_sample_weight(sample_weight, proba.shape[0]), "PriorShiftWrapper.adapt")
+            self._warn_refit_left_out(folds)
+            res = est.estimate(proba, sample_weight, random_state=rs, fold_proba=folds,
+                               cells=cells)
+            return self._finish_adapt(res, res.interval)
         if multiclass and (_is_dask(X) or _is_dask(sample_weight)):
             # Multiclass Dask rows: EM / BBSE as reductions over the calibrated posteriors on
             # the workers (one pass per EM iteration); with the analytic interval (EM).
@@ -933,10 +949,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     def _dask_cells(X: Any, sample_weight: Any, cells: Any, source: Any) -> Any:
         """``adapt``'s ``cells`` as an array in the rows' order, or a clear refusal where they
         cannot be honoured: labelled rows kept as a tally (a Dask or Spark fit beyond 20,000
-        rows), or a Spark DataFrame (its rows have no order an array could follow). Dask rows
-        take them (a Dask array is computed): a set of at most 20,000 rows comes to the client
-        and the in-memory estimate reads the cells; more rows are refused by the scale layer
-        after its first pass (tallies and sums keep no cells)."""
+        rows), or a Spark DataFrame with anything but the name of its cells column (its rows
+        have no order an array could follow; the name comes back as it is). Dask rows take
+        them (a Dask array is computed): a set of at most 20,000 rows comes to the client and
+        the in-memory estimate reads the cells; more rows are refused by the scale layer after
+        its first pass (tallies and sums keep no cells), Spark rows after a count."""
         if source is not None:
             raise ValueError(
                 "`cells` cannot be honoured here: the labelled rows were fitted from more than "
@@ -947,11 +964,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if not (_is_dask(X) or _is_dask(sample_weight)):
             return cells
         if _is_dask(X) and not hasattr(X, "__dask_graph__"):
-            raise ValueError(
-                "`cells` is not taken with a Spark DataFrame: its rows have no order an array "
-                "of cells could follow. Collect the rows (frame.toPandas()) and pass them in "
-                "memory, or leave `cells` out."
-            )
+            if not isinstance(cells, str):
+                raise ValueError(
+                    "With a Spark DataFrame, `cells` must be the name of its column of cells (a "
+                    "str): its rows have no order an array of cells could follow; got "
+                    f"{type(cells).__name__}."
+                )
+            return cells
         if hasattr(cells, "__dask_graph__"):
             cells = cells.compute()
         return np.asarray(cells)

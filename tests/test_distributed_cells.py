@@ -1,7 +1,8 @@
 """``adapt(cells=...)`` on Dask rows: a set of at most 20,000 rows comes to the client and is
 estimated as in memory with its cells (since 4 December 2026; before, every Dask set was refused);
-more rows, a Spark frame (tests/test_spark_refit.py) and labelled rows kept as a tally are refused
-with a message saying why.
+more rows, an array of cells with a Spark frame (tests/test_spark_refit.py; a small frame takes
+the name of its cells column, tests/test_spark_adapt_parity.py) and labelled rows kept as a tally
+are refused with a message saying why.
 
 The reference is ``adapt`` on the same rows in memory with the same cells (the cell-clustered
 shift test and interval are checked against statsmodels' cluster-robust variance in

@@ -187,10 +187,11 @@ def test_add_predictions_probability_is_what_predict_proba_gives_with_fold_model
 
 
 def test_cells_with_a_spark_frame_are_refused_saying_why(spark, cancer):
-    # Dask sets of at most 20,000 rows take adapt(cells=...) (tests/test_distributed_cells.py);
-    # a Spark frame's rows have no order an array of cells could follow, and adapt says so
-    # before any pass over the rows
+    # Dask sets of at most 20,000 rows take adapt(cells=...) (tests/test_distributed_cells.py),
+    # and a small Spark frame takes the name of its cells column
+    # (tests/test_spark_adapt_parity.py); an array of cells cannot follow a Spark frame's rows
+    # (they have no order), and adapt says so before any pass over the rows
     _, _, X_new, model = cancer
     frame = spark.createDataFrame(X_new).coalesce(1)
-    with pytest.raises(ValueError, match="Spark DataFrame: its rows have no order"):
+    with pytest.raises(ValueError, match="must be the name of its column of cells"):
         copy.deepcopy(model).adapt(frame, cells=np.arange(X_new.shape[0]) // 10)

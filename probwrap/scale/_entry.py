@@ -61,6 +61,25 @@ def unlabelled_proba_from_dask(estimator: Any, X: Any, sample_weight: Any = None
     return _rows.unlabelled_proba_from_rows(estimator, X, sample_weight, **kwargs)
 
 
+def spark_cells_rows(estimator: Any, X: Any, sample_weight: Any, cells: str, folds: Any,
+                     n_classes: int) -> tuple:
+    """The rows of a Spark DataFrame ``X`` of at most ``KEPT_ROWS`` rows with the column
+    ``cells`` (``adapt(cells=...)``): ``(proba, fold posteriors or None, weights or None,
+    cells)`` from one pass. More rows are refused (:func:`probwrap.scale._rows.refuse_cells`;
+    one count of the rows first)."""
+    from ._folds import cells_rows
+    from ._spark import SparkRows, _column
+    from ._tally import kept_rows_limit
+
+    _column(X, cells, "cells")
+    n_rows = int(X.count())
+    if n_rows > kept_rows_limit():
+        _rows.refuse_cells(n_rows)
+    proba, fold_proba, w, cell = cells_rows(SparkRows(X, cells, sample_weight, estimator),
+                                            estimator, folds, n_classes)
+    return proba, fold_proba, (None if sample_weight is None else w), cell
+
+
 def fold_scorer(estimator: Any, folds: Any, n_classes: int):
     """A base model refit on the labelled rows and its fold models (``[(model, columns of its
     classes), ...]``), to score Dask or Spark rows where they live (sent there once)."""

@@ -89,6 +89,49 @@ def kept_scored_block(scorer: FoldScorer, Xb: Any, wb: Any) -> KeptScored:
     return KeptScored(p, np.moveaxis(scorer.fold_proba(Xb), 0, 1), w)
 
 
+class KeptCells:
+    """Unlabelled rows with their cells, concatenated in block order by ``+``: the model's
+    posteriors ``proba`` (n, k), the fold models' ``folds`` (n, n_folds, k; None for a model
+    without them), ``weights`` (n,) and ``cells`` (n,)."""
+
+    def __init__(self, proba: np.ndarray, folds: np.ndarray | None, weights: np.ndarray,
+                 cells: np.ndarray) -> None:
+        self.proba = proba
+        self.folds = folds
+        self.weights = weights
+        self.cells = cells
+
+    def __add__(self, other: KeptCells) -> KeptCells:
+        return KeptCells(np.concatenate([self.proba, other.proba]),
+                         None if self.folds is None
+                         else np.concatenate([self.folds, other.folds]),
+                         np.concatenate([self.weights, other.weights]),
+                         np.concatenate([self.cells, other.cells]))
+
+
+def kept_cells_block(estimator: Any, scorer: FoldScorer | None, n_classes: int, Xb: Any,
+                     cb: Any, wb: Any) -> KeptCells:
+    """One block of unlabelled rows with their cells ``cb``: the model's posteriors (the
+    refit model's and every fold model's when ``scorer`` is given), weights and cells."""
+    if scorer is None:
+        p = predict_block(estimator, "predict_proba", Xb, n_classes)
+        folds = None
+    else:
+        p = scorer.proba(Xb)
+        folds = np.moveaxis(scorer.fold_proba(Xb), 0, 1)
+    return KeptCells(p, folds, block_weights(wb, p.shape[0]), np.asarray(cb))
+
+
+def cells_rows(rows: Any, estimator: Any, scorer: FoldScorer | None, n_classes: int) -> tuple:
+    """``(proba, [fold posteriors, ...] or None, weights, cells)`` of a small set of unlabelled
+    rows whose cells are the label column of ``rows`` (a Spark frame's cells column), all from
+    one pass, so that every row's posteriors, weight and cell line up."""
+    kept = rows.map_reduce(kept_cells_block, estimator, rows.shared(scorer), int(n_classes))
+    folds = (None if kept.folds is None
+             else [np.ascontiguousarray(kept.folds[:, i]) for i in range(kept.folds.shape[1])])
+    return kept.proba, folds, kept.weights, kept.cells
+
+
 def scored_rows(rows: Any, scorer: FoldScorer, unit: float = 1.0) -> tuple:
     """``(proba, [fold posteriors, ...], weights)`` of a small set of unlabelled rows (Dask or
     Spark rows, see :func:`probwrap.scale._rows.rows_of`) in block order, from one pass that

@@ -91,14 +91,14 @@ def in_weight_unit(parts: Any, weighted: bool) -> tuple[Any, float]:
 
 
 def refuse_cells(n_rows: int) -> None:
-    """The refusal of ``adapt(cells=...)`` on more than ``KEPT_ROWS`` Dask rows: they are read
+    """The refusal of ``adapt(cells=...)`` on more than ``KEPT_ROWS`` Dask or Spark rows: they are read
     as tallies and sums where they live, and the cells' clustered variance of the mean score
     (at every candidate prior, for the score interval) would need each cell's own sums back,
     as many as there are cells."""
     from ._tally import kept_rows_limit
 
     raise ValueError(
-        f"`cells` is taken with at most {kept_rows_limit():,} Dask rows, whose rows come to the "
+        f"`cells` is taken with at most {kept_rows_limit():,} Dask or Spark rows, whose rows come to the "
         f"client so that adapt runs as in memory; these {n_rows:,} rows are reduced to tallies "
         "and sums where they live, which keep no cells (the cells' clustered variance of the "
         "mean score, at every candidate prior, would need each cell's own sums). Collect the "
