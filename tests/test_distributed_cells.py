@@ -108,7 +108,7 @@ def test_cells_beyond_the_limit_or_with_a_labelled_tally_are_refused(cancer, tal
     # (the limit lowered: these rows stand for more than 20,000)
     X, y, X_new, cells = cancer
     model = _quiet(lambda: PriorShiftWrapper(_model(), cv=3, random_state=0).fit(X, y))
-    with pytest.raises(ValueError, match="at most 0 Dask rows.*400 rows.*keep no cells"):
+    with pytest.raises(ValueError, match="at most 0 Dask or Spark rows.*400 rows.*keep no cells"):
         copy.deepcopy(model).adapt(da.from_array(X_new, chunks=(100, 30)), cells=cells)
     Xd, yd = load_digits(return_X_y=True)
     multi = _quiet(lambda: PriorShiftWrapper(_model(), cv=3, random_state=0).fit(Xd[:300],
