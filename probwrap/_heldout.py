@@ -139,13 +139,26 @@ def check_rows_match(X: Any, n: int) -> None:
         )
 
 
+class FoldScoringError(ValueError):
+    """A fold model was fitted on its training part but refused that fold's held-out rows
+    (``fold``: the fold's index; the message is the model's own)."""
+
+    def __init__(self, message: str, fold: int = -1) -> None:
+        super().__init__(message, fold)
+        self.fold = fold
+
+    def __str__(self) -> str:
+        return str(self.args[0])
+
+
 def _fit_predict_fold(
     estimator: Any, X: Any, y: np.ndarray, train: np.ndarray, test: np.ndarray,
-    params: dict, response: str, keep: bool = False,
+    params: dict, response: str, keep: bool = False, fold: int = -1,
 ) -> tuple[np.ndarray, np.ndarray, Any]:
     """Fit a clone of ``estimator`` on the ``train`` rows (labels as given) and return its
     ``classes_``, ``response`` on the ``test`` rows and (``keep``) the fitted clone, else None;
-    row-wise ``params`` follow the rows."""
+    row-wise ``params`` follow the rows. A ``ValueError`` of the scoring (not of the fit), such
+    as a category the training part lacks, is raised as :class:`FoldScoringError`."""
     n = y.shape[0]
     fold_params = {
         key: (_safe_indexing(value, train)
@@ -154,9 +167,58 @@ def _fit_predict_fold(
     }
     # (a class absent from the training rows is reported once by the caller, for every fold)
     model = clone(estimator).fit(_safe_indexing(X, train), y[train], **fold_params)
-    out = np.asarray(getattr(model, response)(_safe_indexing(X, test)), dtype=float)
+    try:
+        raw = getattr(model, response)(_safe_indexing(X, test))
+    except ValueError as exc:
+        raise FoldScoringError(str(exc), fold) from exc
+    out = np.asarray(raw, dtype=float)
     out = rows_summing_to_one(out, response, f"A fold model ({type(model).__name__})")
     return np.asarray(model.classes_), out, (model if keep else None)
+
+
+def _is_missing(value: Any) -> bool:
+    """True for None, NaN, pandas' NA and NaT (a value unequal to itself or refusing it)."""
+    if value is None:
+        return True
+    try:
+        return bool(value != value)
+    except (TypeError, ValueError):
+        return True
+
+
+def _unseen_values(X: Any, train: np.ndarray, test: np.ndarray, most: int = 3) -> list[str]:
+    """Up to ``most`` non-numeric columns of ``X`` (a pandas DataFrame or a NumPy object array)
+    with values in the ``test`` rows that the ``train`` rows lack, each as "column 'name':
+    'a', 'b'" (at most three values); empty for numeric or other inputs."""
+    try:
+        import pandas as pd
+    except ImportError:  # pragma: no cover
+        pd = None
+    out: list[str] = []
+    if pd is not None and isinstance(X, pd.DataFrame):
+        columns = [(repr(str(c)), X.iloc[:, j]) for j, c in enumerate(X.columns)
+                   if not pd.api.types.is_numeric_dtype(X.iloc[:, j])
+                   or pd.api.types.is_bool_dtype(X.iloc[:, j])]
+        take = [(label, col.iloc[train], col.iloc[test]) for label, col in columns]
+    elif isinstance(X, np.ndarray) and X.ndim == 2 and X.dtype == object:
+        take = [(str(j), X[train, j], X[test, j]) for j in range(X.shape[1])]
+    else:
+        return out
+    for label, tr, te in take:
+        try:  # (unhashable values, or missing values that refuse comparison: skip the column)
+            seen = set(np.asarray(tr, dtype=object).tolist())
+            new = []
+            for v in np.asarray(te, dtype=object).tolist():
+                if v not in seen and v not in new and not _is_missing(v):
+                    new.append(v)
+        except (TypeError, ValueError):
+            continue
+        if new:
+            shown = ", ".join(repr(plain(v)) for v in new[:3]) + (", ..." if len(new) > 3 else "")
+            out.append(f"column {label}: {shown}")
+            if len(out) >= most:
+                break
+    return out
 
 
 def fold_columns(fold_classes: np.ndarray, out: np.ndarray, classes: np.ndarray,
@@ -572,6 +634,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                 )
             try:
                 values = self._cross_fit(X, y_arr, splits, est_params, response, classes)
+            except FoldScoringError as exc:
+                raise ValueError(self._fold_scoring_failure(X, splits, response, exc)) from exc
             except ValueError as exc:  # (numpy's LinAlgError is a ValueError)
                 if not short:
                     raise ValueError(self._fold_failure(X, y_arr, y_index, classes, splits,
@@ -743,6 +807,30 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                 f"the {len(splits)} folds (`cv`): {ranges}. {fix} The estimator said (counting "
                 f"the rows of the training part it was given): {exc}")
 
+    def _fold_scoring_failure(self, X, splits, response: str, exc: FoldScoringError) -> str:
+        """Why cross-fitting failed after a fold model was fitted: it refused the fold's
+        held-out rows, most often for values its training part never held (a category of a
+        pandas column seen in few rows: scikit-learn's ``OneHotEncoder`` raises "Found unknown
+        categories" by default). The class counts and more folds are beside the point here."""
+        name = type(self.estimator).__name__
+        i = int(exc.fold)
+        where = (f"fold {i + 1} of {len(splits)}" if 0 <= i < len(splits)
+                 else f"a fold of {len(splits)}")
+        unseen = ""
+        if 0 <= i < len(splits):
+            found = _unseen_values(X, splits[i][0], splits[i][1])
+            if found:
+                unseen = (" Values in the held-out rows that the training part lacks: "
+                          + "; ".join(found) + ".")
+        return (f"Cross-fitting `estimator` ({name}) fitted the training part of {where} but "
+                f"failed on that fold's held-out rows (`{response}`).{unseen} Every fold model "
+                "meets rows its training part did not hold, so a value seen in only a few rows "
+                "(a rare category) can be new to it: let the model accept unseen values (for "
+                "example scikit-learn's OneHotEncoder(handle_unknown=\"ignore\") or "
+                "handle_unknown=\"infrequent_if_exist\"), merge rare values before fitting, or "
+                "pass a model fitted elsewhere inside sklearn.frozen.FrozenEstimator so nothing "
+                f"is refitted here. The estimator said: {exc}")
+
     def _all_rows_failure(self, y_index: np.ndarray, classes: np.ndarray, exc: Exception) -> str:
         """Why fitting the estimator on all rows failed (a strategy that fits it once, with no
         folds), in the words of :meth:`_fold_failure`: the class counts and the fixes."""
@@ -767,8 +855,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         keep = bool(getattr(self, "_keep_fold_models", False))
         results = Parallel(n_jobs=self.n_jobs)(
             delayed(_fit_predict_fold)(self.estimator, X, y, train, test, est_params, response,
-                                       keep)
-            for train, test in splits
+                                       keep, i)
+            for i, (train, test) in enumerate(splits)
         )
         n = y.shape[0]
         values = None
