@@ -816,20 +816,23 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         i = int(exc.fold)
         where = (f"fold {i + 1} of {len(splits)}" if 0 <= i < len(splits)
                  else f"a fold of {len(splits)}")
-        unseen = ""
-        if 0 <= i < len(splits):
-            found = _unseen_values(X, splits[i][0], splits[i][1])
-            if found:
-                unseen = (" Values in the held-out rows that the training part lacks: "
-                          + "; ".join(found) + ".")
+        found = _unseen_values(X, splits[i][0], splits[i][1]) if 0 <= i < len(splits) else []
+        accept = ("let the model accept unseen values (for example scikit-learn's "
+                  "OneHotEncoder(handle_unknown=\"ignore\") or "
+                  "handle_unknown=\"infrequent_if_exist\"), merge rare values before fitting")
+        frozen = ("pass a model fitted elsewhere inside sklearn.frozen.FrozenEstimator so "
+                  "nothing is refitted here")
+        if found:
+            advice = (" Values in the held-out rows that the training part lacks: "
+                      + "; ".join(found) + ". Every fold model meets rows its training part did "
+                      "not hold, so a value seen in only a few rows (a rare category) can be new "
+                      f"to it: {accept}, or {frozen}.")
+        else:  # (a missing value only in held-out rows, a check of the model's own, ...)
+            advice = (" Fix what the model's message below names; where it is a value the "
+                      f"training part never held (a rare category), {accept}, or {frozen}.")
         return (f"Cross-fitting `estimator` ({name}) fitted the training part of {where} but "
-                f"failed on that fold's held-out rows (`{response}`).{unseen} Every fold model "
-                "meets rows its training part did not hold, so a value seen in only a few rows "
-                "(a rare category) can be new to it: let the model accept unseen values (for "
-                "example scikit-learn's OneHotEncoder(handle_unknown=\"ignore\") or "
-                "handle_unknown=\"infrequent_if_exist\"), merge rare values before fitting, or "
-                "pass a model fitted elsewhere inside sklearn.frozen.FrozenEstimator so nothing "
-                f"is refitted here. The estimator said: {exc}")
+                f"failed on that fold's held-out rows (`{response}`).{advice} The estimator "
+                f"said: {exc}")
 
     def _all_rows_failure(self, y_index: np.ndarray, classes: np.ndarray, exc: Exception) -> str:
         """Why fitting the estimator on all rows failed (a strategy that fits it once, with no

