@@ -187,24 +187,6 @@ _CLASS_SHARES_MARGIN_SE = 1.0
 #: session, "tiny cases"); ``False`` switches the rule off.
 _PASS_OVER_TEMPERATURE_BELOW_SHARES = True
 
-#: Two classes, probability outputs: the temperature ``auto`` fits on all held-out rows may
-#: sharpen the log-odds (``T < 1``) by up to ``1 / _FREE_SHARPENING_T`` freely; beyond that,
-#: only as far as keeps every row it is fitted on within Laplace's rule of succession, no
-#: probability of the less likely class below ``1 / (n + 2)`` (``n`` the rows' effective
-#: number, Kish): ``T >= min(_FREE_SHARPENING_T, max |s| / log(n + 1))`` over the log-odds ``s``
-#: that are not already 0 or 1 in doubles (no temperature moves those). On a few dozen rows
-#: whose held-out scores happen to separate the classes, the fit sharpens until a few
-#: overlapping rows decide it, and the folds, drawn from the same lucky rows, rate it best by
-#: several standard errors: lifelines' multicenter_aids_cohort (logistic regression, 39 rows,
-#: halves 0 and 3: ``T = 0.24``, test log loss 1.50 and 1.65x scikit-learn's sigmoid, now
-#: 1.04 and 1.09), hunt21_sweep.py's vaso (19 rows, seed 2: forest 1.85x, now 1.72;
-#: logistic regression 1.23x, now 1.03). The free factor was measured (0.5, 0.6, 0.7 and
-#: none, docs/small_data.md, twenty-third session): without it the bound costs the accurate
-#: small models whose sharpening is right (breast cancer, wine, mtcars). ``False`` switches
-#: the bound off.
-_BOUND_SHARPENING = True
-_FREE_SHARPENING_T = 0.6
-
 #: Probabilities are floored at this value when scoring candidate maps by log loss, so that a map
 #: that predicts an exact 0 for an event that happens is heavily penalised but stays finite.
 _LOG_LOSS_FLOOR = 1e-15
@@ -230,59 +212,11 @@ def _drop_ineligible(names: list[str], drop: list[str], notes: dict, reason: str
     return [nm for nm in names if nm not in drop]
 
 
-def laplace_temperature_floor(scores: np.ndarray, w: np.ndarray) -> float:
-    """The least temperature that keeps every movable row of weight > 0 within the rule of
-    succession.
-
-    ``max |s| / log(n + 1)`` over the binary log-odds ``s`` of the rows of weight > 0 whose
-    probability is not already 0 or 1 in doubles (``|s| < log(1 / eps)``: no temperature below
-    1 moves those), ``n`` the Kish effective number of the rows (so scaling all weights changes
-    nothing): at that temperature the most extreme such row gets probability ``1 / (n + 2)`` for
-    its less likely class, Laplace's estimate of the chance of an event not seen in ``n``
-    trials. 0 when no row counts.
-
-    >>> import numpy as np
-    >>> t = laplace_temperature_floor(np.array([-2.0, 1.0, 2.0, 800.0]), np.r_[np.ones(3), 0.0])
-    >>> round(t, 4), round(1 / (1 + np.exp(2.0 / t)), 4)   # 1 / (3 + 2)
-    (1.4427, 0.2)
-    """
-    keep = w > 0
-    if not keep.any():
-        return 0.0
-    wk = w[keep] / w[keep].max()
-    n_eff = float(wk.sum() ** 2 / (wk @ wk))
-    a = np.abs(scores[keep])
-    a = a[a < -np.log(np.finfo(float).eps)]
-    return float(a.max() / np.log(n_eff + 1.0)) if a.size else 0.0
-
-
 class _AutoChoice:
     """The automatic choice of ``CalibrationWrapper``: scores every candidate map by
     cross-validated log loss and keeps the simplest one within one standard error of the best.
     Uses the wrapper's ``_fit_map``, ``_apply_map``, ``_one_vs_rest_scores`` and
     ``_make_splitter``."""
-
-    def _bound_sharpening(self, cal: Any, scores: np.ndarray, w: np.ndarray) -> str | None:
-        """Raise a sharpening binary temperature fitted on ``scores`` (probability outputs) to
-        ``min(_FREE_SHARPENING_T, laplace_temperature_floor(scores, w))``; see
-        ``_BOUND_SHARPENING``. Returns a note for ``method_notes_`` when it was raised, else
-        None."""
-        if (not _BOUND_SHARPENING or not isinstance(cal, TemperatureMap)
-                or scores.ndim != 1
-                or getattr(self, "response_", "predict_proba") != "predict_proba"):
-            return None
-        fitted = float(cal.temperature_)
-        bound = min(_FREE_SHARPENING_T, laplace_temperature_floor(scores, w))
-        if not fitted < bound:
-            return None
-        cal.temperature_ = bound
-        return (
-            f"the fit on all held-out rows sharpened to temperature {fitted:.3g}; raised to "
-            f"{bound:.3g}: beyond a factor of {1 / _FREE_SHARPENING_T:.3g} a temperature "
-            "sharpens only as far as keeps every held-out row's probability of its less likely "
-            "class at least 1 / (n + 2) (Laplace's rule of succession, n the effective number "
-            "of rows)"
-        )
 
     def _candidate_names(self) -> list[str]:
         names = list(CALIBRATION_METHODS) if self.candidates is None else list(self.candidates)

@@ -479,11 +479,6 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
                 self.calibrator_ = self._fit_map(
                     CALIBRATION_METHODS[fallback](), scores, ho.y_index, w
                 )
-        if self.method == "auto" and self.method_ == "temperature":
-            text = self._bound_sharpening(self.calibrator_, scores, w)
-            if text is not None:
-                old = self.method_notes_.get("temperature")
-                self.method_notes_["temperature"] = text if old is None else old + "; " + text
         self._map_rows = (scores, w)  # for _cap_level_sharpening after the predicting models
         self._warn_reversed(len(ho.y_index))
         return self
