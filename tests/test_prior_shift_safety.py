@@ -13,6 +13,7 @@ from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 from sklearn.metrics import log_loss
 
+import probwrap._prior_shift as psw_module
 from probwrap import PriorShiftWrapper
 from probwrap.shift import (
     BoundaryPriorWarning,
@@ -193,7 +194,7 @@ def test_harm_reference_is_the_smaller_of_entropy_and_labelled_log_loss():
     assert null_harm_scale(p, w, src, v, reference_loss=2 * ent) == plain
 
 
-def test_twenty_labelled_rows_on_bundled_breast_cancer_move_less_when_they_fit_well():
+def test_twenty_labelled_rows_on_bundled_breast_cancer_move_less_when_they_fit_well(monkeypatch):
     # scikit-learn's bundled breast cancer data (malignant = 1), a logistic regression fitted on
     # a quarter of the rows and frozen, 20 labelled rows, the other rows unlabelled: no shift.
     # On these draws the calibrated posteriors' mean entropy on the unlabelled rows was 3.2-6.5x
@@ -219,15 +220,26 @@ def test_twenty_labelled_rows_on_bundled_breast_cancer_move_less_when_they_fit_w
             warnings.simplefilter("ignore")  # 3 rows of a class on one draw: warned, as it should
             wrapper = PriorShiftWrapper(model, n_resamples=0).fit(X[lab], y[lab])
         none = log_loss(y[new], wrapper.predict_proba(X[new]))
-        ratios = []
+        ratios, capped = [], []
         for reference in (None, wrapper.prior_estimator_._source_log_loss):
             wrapper.prior_estimator_._source_log_loss = reference
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore")
-                wrapper.adapt(X[new])
-            ratios.append(log_loss(y[new], wrapper.predict_proba(X[new])) / none)
+            for level, out in ((2.0, ratios), (psw_module.NO_SHIFT_HARM_PVALUE, capped)):
+                # the average-harm rule alone (level 2: the per-draw cap of session 23 never
+                # applies), then with the cap
+                with monkeypatch.context() as m, warnings.catch_warnings():
+                    m.setattr(psw_module, "NO_SHIFT_HARM_PVALUE", level)
+                    warnings.simplefilter("ignore")
+                    wrapper.adapt(X[new])
+                out.append(log_loss(y[new], wrapper.predict_proba(X[new])) / none)
         assert wrapper.evidence_cutoff_ > 2.0
         assert ratios[1] <= 1.04
+        # the per-draw cap (shift test p >= 0.10) changes neither rule where p < 0.10 (draws
+        # 205 and 239: p = 0.043, 0.059) and holds the entropy-only rule's move on draw 236
+        # (p = 0.12; w 0.58 -> 0.03, 1.057 -> 1.001)
+        if wrapper.shift_pvalue_ < 0.10:
+            assert capped == pytest.approx(ratios, abs=1e-12)
+        else:
+            assert max(capped) <= 1.02 and capped[1] <= ratios[1] + 1e-12
         # on draw 239 (3 labelled rows of class 1) EM's estimate lies far beyond the one-step
         # estimate, and the harm bound's growth for that (estimate_amplification) already holds
         # the entropy-only rule (0.991, was 1.161); on the others the reference is what helps.

@@ -22,6 +22,7 @@ __all__ = [
     "estimate_amplification",
     "null_move_ratio",
     "draw_harm",
+    "draw_capped_weight",
     "NoShiftHarmWarning",
     "draw_cutoff",
 ]
@@ -229,9 +230,11 @@ def _null_harm_scale_moments(
 
 
 class NoShiftHarmWarning(UserWarning):
-    """``adapt`` moved the predictions on evidence that a draw with no shift gives often, and,
-    were the class shares in fact unchanged, that move would raise the log loss of these rows
-    by more than 2 % (see :func:`null_move_ratio`)."""
+    """``adapt`` found evidence that a draw with no shift gives often, and, were the class
+    shares in fact unchanged, the move its evidence rule asks for would raise the log loss of
+    these rows by more than 2 % (see :func:`null_move_ratio`). With ``max_harm`` set (the
+    default) the move was held to that 2 % (:func:`draw_capped_weight`); with
+    ``max_harm=None`` it was made in full."""
 
 
 #: Relative log-loss increase above which a move on weak evidence warns (issue 10's 1.02).
@@ -255,6 +258,39 @@ def draw_harm(harm_scale: float | None, ratio: float | None, statistic: float | 
     if not (np.isfinite(harm_scale) and np.isfinite(statistic) and np.isfinite(ratio)):
         return 0.0
     return float(harm_scale * statistic * (weight**2 + 2.0 * max(float(ratio), 0.0) * weight))
+
+
+def draw_capped_weight(harm_scale: float | None, ratio: float | None,
+                       statistic: float | None, weight: float,
+                       limit: float = DRAW_HARM_LIMIT) -> float:
+    r"""The largest share ``w' <= weight`` of the estimate whose :func:`draw_harm` is at most
+    ``limit``: ``weight`` where its own harm is within ``limit`` (or a part is missing), else
+    the positive root of ``scale * T * (w**2 + 2 * ratio * w) = limit``,
+    ``w' = sqrt(ratio**2 + limit / (scale * T)) - ratio``.
+
+    ``PriorShiftWrapper.adapt`` applies it where the shift test's p-value is at least 0.10
+    (docs/prior_shift.md, "Milder per-draw caps (twenty-third session)"): on such evidence
+    the rows may well not have moved, and a move then costs them the first-order term of
+    :func:`null_move_ratio` that ``max_harm`` (an average over draws) does not carry.
+
+    Examples
+    --------
+    >>> from probwrap.shift._shift_tests import draw_capped_weight, draw_harm
+    >>> w = draw_capped_weight(0.034, 0.85, 2.18, 0.47)   # the 0.47 move would cost 7.6 %
+    >>> round(w, 4), round(draw_harm(0.034, 0.85, 2.18, w), 4)
+    (0.1462, 0.02)
+    >>> draw_capped_weight(0.034, 0.85, 2.18, 0.05)       # within 2 % already
+    0.05
+    """
+    w = float(weight)
+    if harm_scale is None or ratio is None or statistic is None or not w > 0:
+        return w
+    s, t, r = float(harm_scale), float(statistic), max(float(ratio), 0.0)
+    if not (np.isfinite(s) and np.isfinite(t) and np.isfinite(r) and s > 0 and t > 0):
+        return w
+    if draw_harm(s, r, t, w) <= limit:
+        return w
+    return float(min(w, np.sqrt(r * r + limit / (s * t)) - r))
 
 
 def null_move_ratio(
