@@ -9,6 +9,9 @@ in a cutoff that also holds a no-shift draw at the statistic's ``--level`` quant
     PYTHONPATH=$PWD nice python benchmarks/shift_draw_harm.py [--draw-harm 0.02] [--level 0.95] \
         -- benchmarks/shift.py --quick --only=evidence
     PYTHONPATH=$PWD nice python benchmarks/shift_draw_harm.py -- benchmarks/shift_real_hunt22.py --seeds 2
+
+Since session 23 the default gate also caps the share where p >= 0.10 (``draw_capped_weight``),
+so this runs both; ``benchmarks/shift_draw_caps.py`` compares the rules on the same draws.
 """
 
 from __future__ import annotations
