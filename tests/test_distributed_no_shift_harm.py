@@ -69,7 +69,9 @@ def in_memory_reference():
 
 def test_in_memory_cell_warns():
     _, _, mem, caught = in_memory_reference()
-    assert mem.shift_pvalue_ >= 0.10 and mem.adaptation_weight_ > 0.2
+    # the move is held by the per-draw cap (p >= 0.10): 0.144 of the way, not the free weight
+    assert mem.shift_pvalue_ >= 0.10 and mem.adaptation_weight_ > 0.1
+    assert "held" in str(caught[0])
     assert len(caught) == 1
     assert mem.prior_estimate_.null_move_ratio > 0
 
