@@ -20,7 +20,7 @@ from ._column_models import ProbabilityColumn
 from ._cost_policy_summary import CURVE_POINTS, SMALL_HELDOUT_ROWS, _heldout_summary
 from ._heldout import row_count
 from ._validation import plain
-from .calibration._base import WeightScaleWarning, count_weights
+from .calibration._base import FewClassRowsWarning, WeightScaleWarning, count_weights
 from .decision import (
     apply_class_offsets,
     capacity_cutoff,
@@ -326,6 +326,45 @@ class _RuleFitting:
             stacklevel=4,
         )
 
+    def _warn_few_class_rows(self, ho) -> None:
+        """Say so when a class has at least one but fewer than ``FEW_CLASS_ROWS`` (5, Cochran
+        1954, as ``CalibrationWrapper`` and ``PriorShiftWrapper``) held-out rows of weight > 0
+        (rows, not weights: the scale of the weights cannot change it). The tuned cutoff then
+        rests on its anchor, the plug-in cutoff on the model's own probabilities when no map
+        could be chosen, and nothing in the fit said so: ``benchmarks/hunt23_sweep.py``, DAAG's
+        ``nassCDS``, naive Bayes on 40 rows with 2 deaths, cost 1.58x scikit-learn's sigmoid
+        with the same cutoff, silently."""
+        import warnings
+
+        from ._calibration_wrapper import FEW_CLASS_ROWS
+
+        if getattr(ho, "from_tally", False):
+            return
+        w = np.asarray(ho.sample_weight)
+        counts = np.bincount(np.asarray(ho.y_index)[w > 0], minlength=len(self.classes_))
+        few = np.flatnonzero((counts > 0) & (counts < FEW_CLASS_ROWS))
+        if not few.size:
+            return
+        listed = ", ".join(
+            f"{plain(self.classes_[c])!r}: {int(counts[c])} row{'s' if counts[c] > 1 else ''}"
+            for c in few
+        )
+        how = self.cutoff_anchor_map_
+        anchor = (
+            "the plug-in cutoff on the model's own probabilities" if how in (None, "identity")
+            else f"the plug-in cutoff carried through a {how} map fitted on these rows"
+        )
+        warnings.warn(
+            f"{type(self).__name__}(strategy='tuned'): class(es) with fewer than "
+            f"{FEW_CLASS_ROWS} held-out rows ({listed}): the tuned cutoff "
+            f"({self.cutoff_:.6g}) rests on them, and its anchor, {anchor} "
+            f"({self.cutoff_anchor_:.6g}), cannot be chosen with any confidence on so few. "
+            "Hold out more labelled rows of the class(es) named, or calibrate the model on "
+            "more rows first.",
+            FewClassRowsWarning,
+            stacklevel=4,
+        )
+
     def _warn_weight_scale(self, ho) -> None:
         """Warn when the tuned rule's settling test (and, binary, the map behind its anchor)
         reads ``sample_weight`` as relative weights: they sum to less than the rows of weight
@@ -378,6 +417,7 @@ class _RuleFitting:
             self.cutoff_anchor_ = float(anchor)
             self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res,
                                          sample_weight=ho.sample_weight, anchor=anchor).cutoff
+            self._warn_few_class_rows(ho)
             if getattr(ho, "from_tally", False) and ho.response == "predict_proba":
                 self.cutoff_ = _cutoff_at_bin_edge(self.tally_, self.cutoff_)
             else:
