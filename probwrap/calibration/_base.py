@@ -52,6 +52,10 @@ class FewClassRowsWarning(UserWarning):
     The map's part for that class then rests on those rows and its regularisation. ``method=
     "auto"`` instead leaves the order-based maps out below 20 rows and, below 2, uses the most
     regularised map, with a warning of its own.
+
+    Also raised by :class:`~probwrap.CostPolicyWrapper` with ``strategy="tuned"`` for the same
+    count of held-out rows: its cutoff then rests on its anchor, which so few rows cannot
+    choose with any confidence (docs/decisions.md).
     """
 
 
