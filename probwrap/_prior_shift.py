@@ -567,6 +567,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             check_cells(cells, _num_rows(X))
         self.predicted_with_ = "refit"
         self.refit_spread_ratios_, self.fold_spread_variation_ = np.empty(0), np.nan
+        self._labelled_repeat_rate = None  # (adapt's RepeatedRowsWarning; read once)
         self._fold_share = None
         if _multiclass_dask(self.estimator, X, y, sample_weight):
             # Multiclass Dask rows: no tally (a posterior vector has no single score); the
@@ -873,7 +874,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             of a Spark DataFrame (the name of its cells column), whose rows come to the client
             and are estimated as in memory (since 4 December 2026); refused beyond 20,000 Dask
             or Spark rows and after a fit on more than 20,000 Dask or Spark rows
-            (docs/scale.md, "Limits of the Dask path").
+            (docs/scale.md, "Limits of the Dask path"). None (rows in
+            memory): every row is its own unit, unless the rows repeat one another (identical
+            posteriors) far more often than independent draws of the labelled classes do;
+            each group of identical rows is then one cell, with a
+            :class:`~probwrap.shift.RepeatedRowsWarning` (since 4 December 2026).
 
         Returns
         -------
@@ -890,6 +895,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             the rows' share (docs/prior_shift.md, "Estimates far from the truth").
         PriorNotIdentifiedWarning
             When a class share's interval spans all of [0, 1].
+        RepeatedRowsWarning
+            When the rows repeat one another far beyond chance (resampled with replacement,
+            copied records) and no ``cells`` were given: the repeats are counted as cells
+            (docs/prior_shift.md, "Confident misses on real sets").
         """
         check_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to adapt")
@@ -957,6 +966,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                     check_sample_weight(sample_weight, proba.shape[0]), "PriorShiftWrapper.adapt"
                 )
             folds = self._fold_proba(X)
+            if cells is None:
+                # rows repeating one another beyond chance (resampled or copied rows) are
+                # counted as one cell per group of identical rows (RepeatedRowsWarning)
+                cells = self._repeat_cells(proba, folds, sample_weight)
         poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
             self.interval == "score" and not multiclass
         )
@@ -974,6 +987,63 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                                fold_proba=folds, cells=cells)
             interval = res.interval
         return self._finish_adapt(res, interval)
+
+    def _repeat_cells(self, proba: np.ndarray, folds: Any, sample_weight: Any) -> Any:
+        """The groups of identical unlabelled rows as cells, with a
+        :class:`~probwrap.shift.RepeatedRowsWarning`, when the rows repeat one another far more
+        often than independent draws of the labelled classes do; None otherwise (and where the
+        labelled rows were not kept as rows, or their folds are not known).
+
+        Identical rows are rows whose posteriors agree exactly, from the model that scores
+        them and from every fold model; the rate at which independent draws coincide is read
+        from the labelled rows scored by one model (:mod:`probwrap.shift._repeats`). Found on
+        R's AER PhDPublications and survival nwtco, whose batches resampled with replacement
+        from half of the rows missed the truth with intervals that looked firm
+        (docs/prior_shift.md, "Confident misses on real sets")."""
+        from .shift._repeats import (
+            REPEAT_EXCESS,
+            RepeatedRowsWarning,
+            excess_repeats,
+            identical_row_codes,
+            labelled_repeat_rate,
+        )
+
+        est = self.prior_estimator_
+        if est.n_resamples == 0 or np.asarray(proba).shape[0] < 2:
+            return None
+        rate = getattr(self, "_labelled_repeat_rate", None)
+        if rate is None:
+            src = est._source_rows()
+            fold = getattr(est, "_src_fold", None)
+            if (src is None or est._source_row_counts() is not None
+                    or (fold is None and self.predicted_with_ != "frozen")):
+                rate = float("nan")  # a tally, or cross-fitted without the folds: not judged
+            else:
+                rate = labelled_repeat_rate(src[0], src[1], fold)
+            self._labelled_repeat_rate = rate
+        if not np.isfinite(rate):
+            return None
+        codes = identical_row_codes(proba, *(folds or []))
+        observed, expected = excess_repeats(codes, sample_weight, rate)
+        if observed <= REPEAT_EXCESS * expected:
+            return None
+        n = codes.shape[0]
+        groups = int(codes.max()) + 1
+        warnings.warn(
+            f"adapt: {n - groups} of the {n} unlabelled rows repeat another row exactly (the same "
+            f"posteriors; {groups} distinct rows), a design effect of {observed:.3g} where "
+            f"independent draws of these classes give at most {expected:.3g} (from how often "
+            "labelled rows of one class coincide). Rows resampled with replacement from a pool, "
+            "or copied records, are not independent draws: counting each as one would make "
+            "the shift test and the interval too sure. Each group of identical rows was "
+            "counted as one cell (as with cells=...). If the repeats are in fact independent "
+            "rows, pass cells=numpy.arange(n) to count every row; if they are copies, the "
+            "estimate is only as good as the distinct rows behind them (docs/prior_shift.md, "
+            "'Confident misses on real sets').",
+            RepeatedRowsWarning,
+            stacklevel=3,
+        )
+        return codes
 
     @staticmethod
     def _dask_cells(X: Any, sample_weight: Any, cells: Any, source: Any) -> Any:

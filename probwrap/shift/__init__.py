@@ -33,6 +33,7 @@ from ._estimate import (
 )
 from ._estimator import CALIBRATIONS, INTERVALS, PRIOR_METHODS, PriorEstimator
 from ._interval import bca_interval, jackknife_acceleration, score_interval
+from ._repeats import RepeatedRowsWarning
 from ._shift_tests import NoShiftHarmWarning, ShiftTestResult, shift_score_test, shift_test
 
 __all__ = [
@@ -56,6 +57,7 @@ __all__ = [
     "signed_shift_scores",
     "INTERVALS",
     "PriorNotIdentifiedWarning",
+    "RepeatedRowsWarning",
     "bca_interval",
     "jackknife_acceleration",
     "score_interval",
