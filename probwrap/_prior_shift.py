@@ -636,7 +636,25 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             self.predicted_with_ = "frozen"
         elif self._refit_here:
             self._choose_predicting_models(X, est)
+        self._labelled_repeat_rate = self._repeat_rate(X, est, ho.n_folds)
         return self
+
+    def _repeat_rate(self, X: Any, est: PriorEstimator, n_folds: int) -> float:
+        """How often two labelled rows of one class have identical posteriors from the model
+        that scores the ``adapt`` rows (:func:`probwrap.shift._repeats.labelled_repeat_rate`):
+        a frozen model's held-out posteriors, or the refit model's posteriors of the labelled
+        rows (one more ``predict_proba`` of them); NaN where the labelled rows are not kept as
+        rows (then ``adapt`` does not judge its rows' repeats)."""
+        from .shift._repeats import labelled_repeat_rate
+
+        src = est._source_rows()
+        if src is None or est._source_row_counts() is not None or est.n_resamples == 0:
+            return float("nan")
+        if n_folds == 0:
+            return labelled_repeat_rate(src[0], src[1])
+        if not self._refit_here or _is_dask(X) or src[0].shape[0] != _num_rows(X):
+            return float("nan")
+        return labelled_repeat_rate(self._inner_output(X, "predict_proba"), src[1])
 
     def _choose_predicting_models(self, X: Any, est: PriorEstimator) -> None:
         """After a cross-fit whose labelled rows are kept: which models' posteriors the
@@ -1001,32 +1019,23 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         from half of the rows missed the truth with intervals that looked firm
         (docs/prior_shift.md, "Confident misses on real sets")."""
         from .shift._repeats import (
-            REPEAT_EXCESS,
             RepeatedRowsWarning,
             excess_repeats,
             identical_row_codes,
-            labelled_repeat_rate,
+            repeats_beyond_chance,
         )
 
         est = self.prior_estimator_
         if est.n_resamples == 0 or np.asarray(proba).shape[0] < 2:
             return None
         rate = getattr(self, "_labelled_repeat_rate", None)
-        if rate is None:
-            src = est._source_rows()
-            fold = getattr(est, "_src_fold", None)
-            if (src is None or est._source_row_counts() is not None
-                    or (fold is None and self.predicted_with_ != "frozen")):
-                rate = float("nan")  # a tally, or cross-fitted without the folds: not judged
-            else:
-                rate = labelled_repeat_rate(src[0], src[1], fold)
-            self._labelled_repeat_rate = rate
-        if not np.isfinite(rate):
+        if rate is None or not np.isfinite(rate):
             return None
         codes = identical_row_codes(proba, *(folds or []))
-        observed, expected = excess_repeats(codes, sample_weight, rate)
-        if observed <= REPEAT_EXCESS * expected:
+        if not repeats_beyond_chance(*excess_repeats(codes, sample_weight, rate),
+                                     codes, sample_weight):
             return None
+        observed, expected = excess_repeats(codes, sample_weight, rate)
         n = codes.shape[0]
         groups = int(codes.max()) + 1
         warnings.warn(
