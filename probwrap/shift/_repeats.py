@@ -30,8 +30,9 @@ __all__ = [
     "REPEAT_EXCESS",
     "RepeatedRowsWarning",
     "excess_repeats",
+    "collision_bound",
     "identical_row_codes",
-    "labelled_repeat_rate",
+    "labelled_repeat_counts",
     "repeats_beyond_chance",
 ]
 
@@ -39,10 +40,6 @@ __all__ = [
 #: most (see the module docstring) above which ``adapt`` clusters the repeats and warns: at 1.25
 #: the interval counting every row as independent is about 11 % too narrow or more.
 REPEAT_EXCESS = 1.25
-
-#: Pseudo-pairs at the pooled rate added to each class's pairs (a class with few labelled rows
-#: has few pairs, whose rate is then mostly the pooled one).
-_PSEUDO_PAIRS = 1000.0
 
 
 class RepeatedRowsWarning(UserWarning):
@@ -81,37 +78,38 @@ def _tied_pairs(codes: np.ndarray) -> float:
     return float(np.sum(counts * (counts - 1.0)) / 2.0)
 
 
-def labelled_repeat_rate(proba: np.ndarray, y_index: np.ndarray,
-                         fold: np.ndarray | None = None) -> float:
-    """The largest share, over the classes, of pairs of labelled rows of one class whose
-    posteriors agree exactly, counting only pairs scored by the same model (``fold``: the fold
-    whose model scored each row; None, one model); each class's share shrunk toward the share
-    over all classes by ``_PSEUDO_PAIRS`` pseudo-pairs. NaN when no pair is scored by one model.
-
-    ``PriorShiftWrapper`` reads it from one model's posteriors of all labelled rows (the frozen
-    model's, or the refit model's): within the folds of a cross-fit there are about ``1 / K``
-    as many pairs, and on R's infert (165 labelled rows) the rate within the five folds,
-    0.0024, was a low draw of the 0.004 over all pairs.
-    """
+def labelled_repeat_counts(proba: np.ndarray, y_index: np.ndarray,
+                           n_classes: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Tied pairs and pairs of labelled rows by their two classes, ``(tied, pairs)`` of shape
+    (k, k): the pairs of rows of classes ``c`` and ``c'`` whose posteriors (one model's)
+    agree exactly, and all such pairs (``n_c (n_c - 1) / 2`` on the diagonal, ``n_c n_c'``
+    off it)."""
     p = np.asarray(proba, dtype=float)
     y = np.asarray(y_index).astype(int)
-    f = np.zeros(y.shape[0], dtype=int) if fold is None else np.asarray(fold).astype(int)
+    k = int(n_classes) if n_classes is not None else int(y.max(initial=0)) + 1
     codes = identical_row_codes(p)
-    tied = np.zeros(int(y.max(initial=0)) + 1)
-    pairs = np.zeros_like(tied)
-    for g in np.unique(f):
-        in_fold = f == g
-        for c in np.unique(y[in_fold]):
-            rows = in_fold & (y == c)
-            _, local = np.unique(codes[rows], return_inverse=True)
-            m = float(rows.sum())
-            tied[c] += _tied_pairs(np.asarray(local).ravel())
-            pairs[c] += m * (m - 1.0) / 2.0
-    if pairs.sum() <= 0:
-        return float("nan")
-    pooled = tied.sum() / pairs.sum()
-    shrunk = (tied + _PSEUDO_PAIRS * pooled) / (pairs + _PSEUDO_PAIRS)
-    return float(max(pooled, shrunk.max()))
+    g = int(codes.max(initial=-1)) + 1
+    table = np.zeros((g, k))
+    np.add.at(table, (codes, y), 1.0)
+    tied = table.T @ table
+    tied[np.diag_indices(k)] = np.sum(table * (table - 1.0), axis=0) / 2.0
+    n = np.bincount(y, minlength=k).astype(float)
+    pairs = np.outer(n, n)
+    pairs[np.diag_indices(k)] = n * (n - 1.0) / 2.0
+    return tied, pairs
+
+
+def collision_bound(tied: np.ndarray, pairs: np.ndarray, shares: np.ndarray) -> float:
+    """How often two independent rows of a mix of the classes with ``shares`` coincide, at most:
+    ``shares' C shares`` with each entry of the class-pair rate ``C`` at its upper bound
+    ``(D + 2 sqrt(D) + 2) / P`` from ``D`` tied of ``P`` labelled pairs (about the one-sided
+    95 % Poisson bound of a count, common practice; 1 where there are no pairs)."""
+    t = np.asarray(tied, dtype=float)
+    pr = np.asarray(pairs, dtype=float)
+    c = np.where(pr > 0, (t + 2.0 * np.sqrt(t) + 2.0) / np.maximum(pr, 1.0), 1.0)
+    c = np.minimum(c, 1.0)
+    sh = np.asarray(shares, dtype=float)
+    return float(sh @ c @ sh)
 
 
 def repeats_beyond_chance(observed: float, expected: float, codes: np.ndarray,
