@@ -897,10 +897,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             and are estimated as in memory (since 4 December 2026); refused beyond 20,000 Dask
             or Spark rows and after a fit on more than 20,000 Dask or Spark rows
             (docs/scale.md, "Limits of the Dask path"). None (rows in
-            memory): every row is its own unit, unless the rows repeat one another (identical
-            posteriors) far more often than independent draws of the labelled classes do;
-            each group of identical rows is then one cell, with a
-            :class:`~probwrap.shift.RepeatedRowsWarning` (since 4 December 2026).
+            memory): every row is its own unit; where the rows repeat one another (identical
+            posteriors) far more often than independent draws of the labelled classes do, a
+            :class:`~probwrap.shift.RepeatedRowsWarning` says so (since 4 December 2026), and
+            cells grouping the identical rows count each group once.
 
         Returns
         -------
@@ -919,8 +919,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             When a class share's interval spans all of [0, 1].
         RepeatedRowsWarning
             When the rows repeat one another far beyond chance (resampled with replacement,
-            copied records) and no ``cells`` were given: the repeats are counted as cells
-            (docs/prior_shift.md, "Confident misses on real sets").
+            copied records) and no ``cells`` were given: the interval, counting every row as
+            independent, is then too narrow (docs/prior_shift.md, "Confident misses on real
+            sets").
         """
         check_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to adapt")
@@ -989,9 +990,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 )
             folds = self._fold_proba(X)
             if cells is None:
-                # rows repeating one another beyond chance (resampled or copied rows) are
-                # counted as one cell per group of identical rows (RepeatedRowsWarning)
-                cells = self._repeat_cells(proba, folds, sample_weight)
+                # rows repeating one another beyond chance (resampled or copied rows): the
+                # interval and the shift test count them as independent (RepeatedRowsWarning)
+                self._warn_repeats(proba, folds, sample_weight)
         poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
             self.interval == "score" and not multiclass
         )
@@ -1010,18 +1011,19 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             interval = res.interval
         return self._finish_adapt(res, interval)
 
-    def _repeat_cells(self, proba: np.ndarray, folds: Any, sample_weight: Any) -> Any:
-        """The groups of identical unlabelled rows as cells, with a
-        :class:`~probwrap.shift.RepeatedRowsWarning`, when the rows repeat one another far more
-        often than independent draws of the labelled classes do; None otherwise (and where the
-        labelled rows were not kept as rows, or their folds are not known).
+    def _warn_repeats(self, proba: np.ndarray, folds: Any, sample_weight: Any) -> None:
+        """Warn (:class:`~probwrap.shift.RepeatedRowsWarning`) when the unlabelled rows repeat
+        one another far more often than independent draws of the labelled classes do; nothing
+        where the labelled rows were not kept as rows.
 
         Identical rows are rows whose posteriors agree exactly, from the model that scores
         them and from every fold model; the rate at which independent draws coincide is read
         from the labelled rows scored by one model (:mod:`probwrap.shift._repeats`). Found on
         R's AER PhDPublications and survival nwtco, whose batches resampled with replacement
         from half of the rows missed the truth with intervals that looked firm
-        (docs/prior_shift.md, "Confident misses on real sets")."""
+        (docs/prior_shift.md, "Confident misses on real sets"). The estimate, the interval and
+        the test are unchanged: ``cells`` (each group of identical rows one cell) counts the
+        repeats as such, which the user decides."""
         from .shift import em_prior
         from .shift._repeats import (
             RepeatedRowsWarning,
@@ -1035,11 +1037,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if est.n_resamples == 0 or np.asarray(proba).shape[0] < 2:
             return None
         counts = getattr(self, "_labelled_repeats", None)
-        if counts is None:
-            return None
+        if counts is None or est.n_resamples == 0 or np.asarray(proba).shape[0] < 2:
+            return
         codes = identical_row_codes(proba, *(folds or []))
         if int(codes.max()) + 1 == codes.shape[0]:
-            return None  # no row repeats
+            return  # no row repeats
         # the shares of the mix: the source's and the rows' maximum-likelihood estimate (the
         # rate of coincidences differs by class; the larger of the two is taken)
         with warnings.catch_warnings():
@@ -1049,24 +1051,23 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         rate = max(collision_bound(*counts, est.source_prior_), collision_bound(*counts, ml))
         observed, expected = excess_repeats(codes, sample_weight, rate)
         if not repeats_beyond_chance(observed, expected, codes, sample_weight):
-            return None
+            return
         n = codes.shape[0]
         groups = int(codes.max()) + 1
         warnings.warn(
             f"adapt: {n - groups} of the {n} unlabelled rows repeat another row exactly (the same "
             f"posteriors; {groups} distinct rows), a design effect of {observed:.3g} where "
             f"independent draws of these classes give at most {expected:.3g} (from how often "
-            "labelled rows of one class coincide). Rows resampled with replacement from a pool, "
-            "or copied records, are not independent draws: counting each as one would make "
-            "the shift test and the interval too sure. Each group of identical rows was "
-            "counted as one cell (as with cells=...). If the repeats are in fact independent "
-            "rows, pass cells=numpy.arange(n) to count every row; if they are copies, the "
-            "estimate is only as good as the distinct rows behind them (docs/prior_shift.md, "
-            "'Confident misses on real sets').",
+            "labelled rows coincide). The shift test and target_prior_interval_ count every "
+            "row as an independent draw; rows resampled with replacement from a pool, or copied "
+            "records, are not, and the interval is then too narrow (it can miss the share with "
+            "no other warning). If the repeats are copies, adapt on the distinct rows, or pass "
+            "cells= giving each group of identical rows one label (for a NumPy array X: "
+            "numpy.unique(X, axis=0, return_inverse=True)[1]) so that each group counts once "
+            "(docs/prior_shift.md, 'Confident misses on real sets').",
             RepeatedRowsWarning,
             stacklevel=3,
         )
-        return codes
 
     @staticmethod
     def _dask_cells(X: Any, sample_weight: Any, cells: Any, source: Any) -> Any:
