@@ -656,9 +656,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             return None
         if n_folds == 0:
             return labelled_repeat_counts(src[0], src[1], k)
-        if not self._refit_here or _is_dask(X) or src[0].shape[0] != _num_rows(X):
+        if not self._refit_here or _is_dask(X):
             return None
-        return labelled_repeat_counts(self._inner_output(X, "predict_proba"), src[1], k)
+        proba = self._inner_output(X, "predict_proba")
+        if proba.shape[0] != src[0].shape[0]:
+            return None
+        return labelled_repeat_counts(proba, src[1], k)
 
     def _choose_predicting_models(self, X: Any, est: PriorEstimator) -> None:
         """After a cross-fit whose labelled rows are kept: which models' posteriors the
