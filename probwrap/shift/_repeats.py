@@ -11,16 +11,17 @@ copies of pool row ``g`` (``c_g`` about Poisson with mean ``n / N``), ``E sum_g 
 u)^2 / n^2 = (1 + n / N) s^2 / n``.
 
 Identical rows also arise by chance where the features are few and discrete. How often is read
-from the labelled rows: the share of their pairs (of one class, scored by the same model) whose
-posteriors agree exactly, the probability that two independent draws of that class coincide
-(Rényi's collision probability). Independent draws of a mix of the classes coincide at most as
-often as the class that coincides most (``sum_x (sum_c pi_c f_c(x))^2 <= max_c sum_x f_c(x)^2``
-by convexity), so the repeats expected of ``n`` independent unlabelled rows give a design effect
-of at most ``1 + (n - 1) q`` with ``q`` that largest rate. Where the rows' own design effect of
-their repeats, ``sum_g W_g^2 / sum_i w_i^2`` (``W_g`` the weight of a group of identical rows), is
-well above it, ``PriorShiftWrapper.adapt`` warns (:class:`RepeatedRowsWarning`;
-docs/prior_shift.md, "Confident misses on real sets"); ``cells`` grouping the identical rows
-then count each group once.
+from the labelled rows scored by one model: for each pair of classes ``c, c'`` the share of
+pairs of rows of those classes whose posteriors agree exactly, an estimate of the probability
+``C_cc' = sum_x f_c(x) f_c'(x)`` that independent draws of the two classes coincide (on the
+diagonal Rényi's collision probability). Independent draws of a mix with shares ``pi`` coincide
+with probability ``q = pi' C pi``, so the repeats expected of ``n`` independent unlabelled rows
+give a design effect of about ``1 + (n - 1) q`` (:func:`collision_bound` takes each ``C_cc'`` at
+its upper bound and ``adapt`` the larger ``q`` of the source shares and the rows' estimate).
+Where the rows' own design effect of their repeats, ``sum_g W_g^2 / sum_i w_i^2`` (``W_g`` the
+weight of a group of identical rows), is well above it, ``PriorShiftWrapper.adapt`` warns
+(:class:`RepeatedRowsWarning`; docs/prior_shift.md, "Confident misses on real sets");
+``cells`` grouping the identical rows then count each group once.
 """
 
 from __future__ import annotations
@@ -50,7 +51,7 @@ class RepeatedRowsWarning(UserWarning):
 
     Raised by ``PriorShiftWrapper.adapt`` (rows in memory, no ``cells`` given) when the design
     effect of the rows' exact repeats is more than ``REPEAT_EXCESS`` (1.25) times the largest one
-    that independent draws give, read from how often labelled rows of one class coincide
+    that independent draws give, read from how often labelled rows coincide
     (:mod:`probwrap.shift._repeats`). Rows resampled with replacement from a pool, or copied
     records, carry the pool's own sampling error, which an interval counting every row as an
     independent draw leaves out: on R's AER PhDPublications and survival nwtco, batches of 400
