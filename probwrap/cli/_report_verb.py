@@ -353,6 +353,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         fired = [f"{content.class_names[j]} after batch {a.first_batch}"
                  for j, a in content.class_alarms.items() if a.first_batch is not None]
         line += f", alarms: {'; '.join(fired)}" if fired else ", no prevalence alarm"
+    metric_summary(content, summary)
     line += group_summary(content, summary)
     line += cell_summary(content, summary)
     if given is not None:
@@ -532,6 +533,18 @@ def _plain_json(value: Any) -> Any:
     if isinstance(value, bool | int | str) or value is None:
         return value
     return str(value)
+
+
+def metric_summary(content: Any, summary: dict) -> None:
+    """The calibration metrics in the JSON summary (``metrics``: each one's value, interval,
+    the bootstrap resamples left out because the number could not be computed on them, and
+    why an interval is not given, null when it is)."""
+    summary["metrics"] = [
+        {"key": m.key, "label": m.label, "value": _plain_json(float(m.value)),
+         "low": _plain_json(float(m.low)), "high": _plain_json(float(m.high)),
+         "dropped_resamples": int(getattr(m, "dropped_resamples", 0)),
+         "interval_note": getattr(m, "interval_note", None)}
+        for m in getattr(content, "metrics", None) or []]
 
 
 def group_summary(content: Any, summary: dict) -> str:
@@ -747,6 +760,7 @@ def _handler(args: argparse.Namespace) -> int:
                            adaptation_weight=float(content.adaptation_weight))
             line += f", applied by the rules {content.applied_prevalence:.4f}"
     line += promise_summary(content, summary)
+    metric_summary(content, summary)
     line += group_summary(content, summary)
     line += cell_summary(content, summary)
     if given is not None:

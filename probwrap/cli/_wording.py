@@ -63,6 +63,7 @@ _RULES: list[tuple[re.Pattern[str], str]] = [(re.compile(a), b) for a, b in [
     (r"because `metric` could not be evaluated on them", "because the number could not be "
      "computed on them"),
     (r"`metric` could be evaluated on only", "the number could be computed on only"),
+    (r"\s*\(interval_reliable=False\)", ""),
 ]]
 
 

@@ -21,6 +21,10 @@ ConfidenceInterval.__doc__ = "Lower and upper end of a two-sided confidence inte
 
 _METHODS = ("percentile", "basic")
 
+#: largest share of failed resamples with which an interval is still called reliable (10 %,
+#: common practice for a share of missing values one may leave out without modelling why)
+MAX_DROPPED_SHARE = 0.10
+
 
 @dataclass(frozen=True, eq=False)
 class BootstrapResult:
@@ -44,6 +48,14 @@ class BootstrapResult:
         Resamples on which the metric raised a ``ValueError`` or was not finite (for example a
         resample with a single class for a metric needing both); they are left out, with a
         warning.
+    n_resamples : int
+        Resamples drawn (usable and failed).
+    interval_reliable : bool
+        False when more than :data:`MAX_DROPPED_SHARE` of the resamples failed. Resamples fail
+        for a reason tied to their values (a calibration slope fails on resamples whose classes
+        do not overlap, exactly those on which it would be largest), so the usable ones are
+        not a fair sample and the interval is biased; it is still returned, with a warning
+        saying so.
     """
 
     statistic: float | np.ndarray
@@ -53,6 +65,8 @@ class BootstrapResult:
     method: str
     confidence_level: float
     n_failed: int
+    n_resamples: int = 0
+    interval_reliable: bool = True
 
 
 def _scalar_or_array(values: np.ndarray) -> float | np.ndarray:
@@ -249,10 +263,15 @@ def bootstrap_interval(
             f"`metric` could be evaluated on only {n_resamples - n_failed} of {n_resamples} "
             f"resamples (first problem: {first_error}); no interval can be formed."
         )
+    reliable = n_failed <= MAX_DROPPED_SHARE * n_resamples
     if n_failed:
+        verdict = ("" if reliable else
+                   f"; that is more than {MAX_DROPPED_SHARE:.0%} of them, and resamples fail "
+                   "for a reason tied to their values, so the interval is biased and marked "
+                   "unreliable (interval_reliable=False)")
         warnings.warn(
             f"{n_failed} of {n_resamples} resamples were left out because `metric` could not be "
-            f"evaluated on them (first problem: {first_error}).",
+            f"evaluated on them (first problem: {first_error}){verdict}.",
             UserWarning,
             stacklevel=2,
         )
@@ -273,4 +292,6 @@ def bootstrap_interval(
         method=method,
         confidence_level=float(confidence_level),
         n_failed=n_failed,
+        n_resamples=int(n_resamples),
+        interval_reliable=reliable,
     )

@@ -16,6 +16,7 @@ import numpy as np
 
 from .._validation import plain
 from ..metrics import bootstrap_interval
+from ..metrics._bootstrap import MAX_DROPPED_SHARE
 
 __all__ = [
     "MetricRow",
@@ -28,6 +29,7 @@ __all__ = [
     "class_index",
     "gated_prior",
     "metric_row",
+    "withheld_interval",
     "FIGURE_NAMES",
     "draw_figure",
     "figure_notes",
@@ -44,6 +46,10 @@ class MetricRow:
 
     ``value`` is the number shown; for the binned calibration error it is the bias-corrected
     estimate and ``plain_value`` the plain (plug-in) binned error (see ``interval_method``).
+    ``dropped_resamples`` counts the bootstrap resamples on which the metric could not be
+    computed (left out of the interval). When more than
+    :data:`probwrap.metrics._bootstrap.MAX_DROPPED_SHARE` of them were dropped (or all), the
+    interval is not given (``low`` and ``high`` NaN) and ``interval_note`` says why.
     """
 
     key: str
@@ -54,6 +60,8 @@ class MetricRow:
     ideal: str
     interval_method: str = "percentile"
     plain_value: float | None = None
+    dropped_resamples: int = 0
+    interval_note: str | None = None
 
 
 @dataclass(frozen=True)
@@ -281,11 +289,32 @@ def metric_row(notes: NoteLog, key: str, label: str, fn: Any, y: np.ndarray, p: 
         return MetricRow(key, label, nan, nan, nan, ideal)
     value = float(res.statistic)
     low, high = float(res.confidence_interval.low), float(res.confidence_interval.high)
+    why = withheld_interval(notes, key, label, res.n_failed, res.n_resamples)
+    if why is not None:
+        low = high = float("nan")
+    extra = {"dropped_resamples": int(res.n_failed), "interval_note": why}
     if not binned:
-        return MetricRow(key, label, value, low, high, ideal)
+        return MetricRow(key, label, value, low, high, ideal, **extra)
     corrected = 2.0 * value - float(np.median(res.bootstrap_distribution))
     return MetricRow(key, label, max(corrected, 0.0), max(low, 0.0), max(high, 0.0), ideal,
-                     interval_method="basic, bias-corrected", plain_value=value)
+                     interval_method="basic, bias-corrected", plain_value=value, **extra)
+
+
+def withheld_interval(notes: NoteLog, key: str, label: str, n_dropped: int,
+                      n_resamples: int) -> str | None:
+    """Why a metric's interval is not given (None: it is): more than ``MAX_DROPPED_SHARE`` of
+    its bootstrap resamples could not be computed. Those resamples are not a fair share (a
+    calibration slope fails exactly on resamples whose classes separate, where it would be
+    largest), so an interval from the rest would be biased. The reason is also a note and a
+    ``UserWarning``."""
+    if n_dropped <= MAX_DROPPED_SHARE * n_resamples:
+        return None
+    why = (f"no interval: the number could not be computed in {n_dropped} of {n_resamples} "
+           f"resamples, more than {MAX_DROPPED_SHARE:.0%} (common practice), so an interval "
+           "from the rest would be biased")
+    notes.add(f"metric:{key}", label, "no interval", why)
+    warnings.warn(f"report, {label}: {why}", UserWarning, stacklevel=3)
+    return why
 
 
 def gated_prior(res: Any, source_prior: Any, index: int | None = None) -> tuple[float, Any]:

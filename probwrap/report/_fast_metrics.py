@@ -31,7 +31,7 @@ from ..metrics import (
     log_loss,
 )
 from ..metrics._slope import slope_intercept_fit, slope_intercept_fit_log_odds
-from ._common import MetricRow, NoteLog
+from ._common import MetricRow, NoteLog, withheld_interval
 
 __all__ = ["FAST_BOOTSTRAP_ROWS", "fast_metric_rows"]
 
@@ -128,15 +128,28 @@ def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins:
             nan = float("nan")
             out.append(MetricRow(key, labels[key], nan, nan, nan, ideal))
             continue
-        d = dist[:, j][np.isfinite(dist[:, j])]
-        lo, hi = np.quantile(d, [alpha / 2.0, 1.0 - alpha / 2.0])
+        finite = np.isfinite(dist[:, j])
+        d = dist[:, j][finite]
+        dropped = int(n_resamples - d.shape[0])
+        if dropped:
+            warnings.warn(f"report, {labels[key]}: {dropped} of {n_resamples} resamples were "
+                          "left out because the number could not be computed on them.",
+                          UserWarning, stacklevel=3)
+            notes.add(f"metric:{key}", labels[key], "UserWarning",
+                      f"{dropped} of {n_resamples} resamples were left out because the number "
+                      "could not be computed on them.")
+        why = withheld_interval(notes, key, labels[key], dropped, n_resamples)
+        lo, hi = ((np.nan, np.nan) if why is not None
+                  else np.quantile(d, [alpha / 2.0, 1.0 - alpha / 2.0]))
+        extra = {"dropped_resamples": dropped, "interval_note": why}
         if key == "ece":
-            corrected = 2.0 * value - float(np.median(d))
+            corrected = 2.0 * value - (float(np.median(d)) if d.size else value)
             out.append(MetricRow(key, labels[key], max(corrected, 0.0),
                                  max(2.0 * value - hi, 0.0), max(2.0 * value - lo, 0.0), ideal,
-                                 interval_method="basic, bias-corrected", plain_value=value))
+                                 interval_method="basic, bias-corrected", plain_value=value,
+                                 **extra))
         else:
             method = "percentile" if key in ("brier", "log_loss") else "percentile, one-step"
             out.append(MetricRow(key, labels[key], float(value), float(lo), float(hi), ideal,
-                                 interval_method=method))
+                                 interval_method=method, **extra))
     return out

@@ -138,7 +138,10 @@ def metric_rows_html(c: Any) -> str:
     for m in c.metrics:
         mark = (' <sup class="pw-mark"><a href="#notes-calibration">note</a></sup>'
                 if f"metric:{m.key}" in noted else "")
-        out.append(f'<tr data-metric="{m.key}"><td>{_text(m.label)}{mark}</td>{_num(m.value)}'
+        # resamples on which the number could not be computed (left out of the interval)
+        dropped = getattr(m, "dropped_resamples", 0)
+        out.append(f'<tr data-metric="{m.key}" data-dropped-resamples="{dropped}">'
+                   f"<td>{_text(m.label)}{mark}</td>{_num(m.value)}"
                    f"{_num(m.low)}{_num(m.high)}<td>{_text(m.ideal)}</td></tr>")
     return "".join(out)
 
