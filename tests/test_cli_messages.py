@@ -401,8 +401,9 @@ def test_cutoff_says_why_the_bayes_and_kept_cutoffs_are_missing(files, capsys):
                          "risk", "--label-column", "damaged", "--cost-fp", "0", "--cost-fn",
                          "4", "--resamples", "0")
     assert code == 0 and "Traceback" not in err
-    assert "at Bayes cutoff" not in out and "kept by CostPolicyWrapper" not in out
-    assert "probwrap cutoff: warning: no Bayes cutoff" in err and "c_fp - c_tn = 0" in err
+    assert "at Bayes cutoff" not in out and "settled cutoff" not in out
+    assert "probwrap cutoff: warning: no Bayes cutoff, and so no settled cutoff" in err
+    assert "c_fp - c_tn = 0" in err and "CostPolicyWrapper" not in err
 
 
 # -- seeds ---------------------------------------------------------------------------------------

@@ -200,8 +200,8 @@ def cutoff_summary(
             bayes = plugin_cutoff(original)
         except ValueError as exc:
             # the least-cost search still runs; say why two of the usual lines are missing
-            warnings.warn(f"no Bayes cutoff, and no cutoff kept by CostPolicyWrapper (which "
-                          f"refuses these costs): {exc}", UserWarning, stacklevel=2)
+            warnings.warn(f"no Bayes cutoff, and so no settled cutoff (which starts from "
+                          f"it): {exc}", UserWarning, stacklevel=2)
             bayes = None
         out["bayes_cutoff"] = bayes
         for name, cut in (("cost_at_half", 0.5), ("cost_at_bayes_cutoff", bayes)):
@@ -388,7 +388,8 @@ def _text(out: dict[str, Any], path: str) -> str:
                    if kept["kept_recalibrated_bayes_cutoff"] else
                    f"nearest {target} among those not shown at 5 % to cost more")
             lines.append(
-                f"  kept by CostPolicyWrapper {cutoff_text(kept['cutoff'])}   cost {kept['expected_cost']:.6g}"
+                f"  settled cutoff        {cutoff_text(kept['cutoff'])}   "
+                f"cost {kept['expected_cost']:.6g}"
                 f"   ({why})"
             )
     return "\n".join(lines)

@@ -37,6 +37,21 @@ _RULES: list[tuple[re.Pattern[str], str]] = [(re.compile(a), b) for a, b in [
      "The reported prevalence is shrunk toward the source prevalence (by the estimator's "
      "default pseudo-rows; no option changes it);"),
     (r"within max_iter=(\d+) (?:iterations|corrections)", r"within \1 iterations"),
+    # prior shift: the command line says "prevalence" (its verb, options and output) where the
+    # library says "prior"; "prior shift" itself stays, as the name of the assumption
+    (r"\bPrior estimation did not converge", "The prevalence estimate did not converge"),
+    (r"cannot identify the class priors", "cannot identify the prevalence"),
+    (r"\b([Tt])he source prior is returned", r"\1he source prevalence is returned"),
+    (r"use method='em' with", "use --method em with"),
+    (r"No class prior is consistent with", "No prevalence is consistent with"),
+    (r"The prior-shift assumption probably fails",
+     "The prior-shift assumption (only the prevalence changed) probably fails"),
+    (r"the single least-rejected prior\b", "the single least-rejected prevalence"),
+    (r"the prior estimate is very uncertain", "the prevalence estimate is very uncertain"),
+    (r"their estimated prior rests", "their estimated share rests"),
+    (r"The interval of the class priors rests on", "The interval of the prevalence rests on"),
+    (r"every estimate of its prior fragile", "every estimate of its share fragile"),
+    (r"to estimate its prior\.", "to estimate its share."),
     (r"raise `max_iter`, or use `prior_strength`\.|Raise `max_iter`, or use `prior_strength`\.",
      "no option changes the iterations: read the interval rather than the point estimate."),
     # weights
