@@ -140,7 +140,8 @@ def metric_rows_html(c: Any) -> str:
                 if f"metric:{m.key}" in noted else "")
         # resamples on which the number could not be computed (left out of the interval)
         dropped = getattr(m, "dropped_resamples", 0)
-        out.append(f'<tr data-metric="{m.key}" data-dropped-resamples="{dropped}">'
+        count = f' data-dropped-resamples="{dropped}"' if dropped else ""
+        out.append(f'<tr data-metric="{m.key}"{count}>'
                    f"<td>{_text(m.label)}{mark}</td>{_num(m.value)}"
                    f"{_num(m.low)}{_num(m.high)}<td>{_text(m.ideal)}</td></tr>")
     return "".join(out)
