@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 
 from .._validation import check_target_labels, plain
-from ._bootstrap import bootstrap_interval
+from ._bootstrap import MAX_DROPPED_SHARE, bootstrap_interval
 from ._calibration_tests import smooth_calibration_error
 from ._inputs import count_scale_weights, prepare_binary
 from ._scores import brier_score, log_loss, log_loss_of_log_odds
@@ -328,6 +328,11 @@ def _interval(notes, label, metric, y, p, w, n_resamples, level, seed,
                                      confidence_level=level, random_state=seed, **kw)
     except ValueError as exc:
         notes.append(f"group {plain(label)!r}: no interval for {metric.__name__} ({exc})")
+        return (float("nan"), float("nan"))
+    if not res.interval_reliable:  # many resamples failed, for a reason tied to their values
+        notes.append(f"group {plain(label)!r}: no interval for {metric.__name__} (it could not "
+                     f"be computed in {res.n_failed} of {res.n_resamples} resamples, more than "
+                     f"{MAX_DROPPED_SHARE:.0%}, so an interval from the rest would be biased)")
         return (float("nan"), float("nan"))
     return (float(res.confidence_interval.low), float(res.confidence_interval.high))
 
@@ -693,9 +698,10 @@ def gap_with_interval(gap: GroupGap, value: Callable[[np.ndarray, np.ndarray], f
             diffs[r] = vals[0] - vals[1]
     ok = diffs[np.isfinite(diffs)]
     failed = n_resamples - ok.shape[0]
-    if ok.shape[0] < max(2, n_resamples // 2):
+    if ok.shape[0] < 2 or failed > MAX_DROPPED_SHARE * n_resamples:
         notes.append(f"gap in {name}: no interval ({failed} of {n_resamples} resamples "
-                     "gave no value).")
+                     f"gave no value, more than {MAX_DROPPED_SHARE:.0%}, so an interval from "
+                     "the rest would be biased).")
         return gap
     if failed:
         notes.append(f"gap in {name}: {failed} of {n_resamples} resamples gave no value "

@@ -33,7 +33,7 @@ from ..metrics._groups import (
     gap_with_interval,
 )
 from ..metrics._inputs import count_scale_weights
-from ._common import NoteLog
+from ._common import NoteLog, withheld_interval
 from ._groups_html import gap_interval_text, resampled_words
 from ._html_parts import _text
 
@@ -112,7 +112,8 @@ def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, l
         res = log.compute(key, about, bootstrap_interval, fn, y, p, sample_weight=w,
                           n_resamples=n_resamples, confidence_level=level, random_state=seed,
                           expected=(ValueError,), **kw)
-        if res is None:
+        if res is None or withheld_interval(log, key, about, res.n_failed,
+                                            res.n_resamples) is not None:
             return _NAN2
         return float(res.confidence_interval.low), float(res.confidence_interval.high)
 
