@@ -666,8 +666,9 @@ def gap_with_interval(gap: GroupGap, value: Callable[[np.ndarray, np.ndarray], f
     A stratified bootstrap: the rows of each of the two groups are resampled independently,
     the draw counts multiplying the weights (as :func:`bootstrap_interval` does), and
     ``value(row_indices, weights)`` evaluated on each. Resamples that give no value are left
-    out and counted in ``notes``; with fewer than half left, no interval. With ``cells`` (a
-    cell code per row) whole cells are drawn within each group instead of rows.
+    out and counted in ``notes``; with more than 10 % failed (``MAX_DROPPED_SHARE``), no
+    interval. With ``cells`` (a cell code per row) whole cells are drawn within each group
+    instead of rows.
     """
     from dataclasses import replace
 
