@@ -157,3 +157,24 @@ def test_group_gap_interval_withheld_when_many_resamples_drop():
     assert MAX_DROPPED_SHARE * 200 < dropped < 100
     assert "more than 10%, so an interval from the rest would be biased" in note
     assert np.all(np.isfinite(gaps["brier"].interval))  # no resample lost
+
+
+def test_every_resample_failing_gives_no_interval_and_the_reason():
+    # a metric computable on the rows as given but on no resample: no interval is made up
+    from probwrap.report._common import NoteLog, metric_row
+
+    def only_unweighted(y, p, sample_weight=None):
+        if sample_weight is not None:
+            raise ValueError("needs the rows as given")
+        return float(np.mean(p))
+
+    y, p = _iris_petal_width()
+    with pytest.raises(ValueError, match=r"only 0 of 50 resamples .*needs the rows as given"):
+        bootstrap_interval(only_unweighted, y, p, n_resamples=50, random_state=0)
+    notes = NoteLog()
+    with pytest.warns(UserWarning, match="not computed"):
+        row = metric_row(notes, "odd", "odd metric", only_unweighted, y, p, None, "0", 50,
+                         0.95, 0)
+    assert np.isnan(row.low) and np.isnan(row.high)
+    assert [n.kind for n in notes.notes] == ["not computed"]
+    assert "only 0 of 50 resamples" in notes.notes[0].message
