@@ -55,6 +55,8 @@ from ._cutoff import _level
 from ._prevalence_numbers import (
     batch_alarm_json,
     effective_rows,
+    held_toward_source,
+    interval_reach,
     kish_scaled,
     prevalence_from_reference,
     prevalence_from_source,
@@ -195,6 +197,11 @@ def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
                      "prevalence": res["prevalence"], "interval": res["interval"],
                      "shift_statistic": res["shift_statistic"],
                      "shift_pvalue": res["shift_pvalue"]})
+        if "ml_prevalence" in res:  # EM with --reference: the rows alone and the pull used
+            rows[-1]["ml_prevalence"] = res["ml_prevalence"]
+            rows[-1]["pseudo_rows"] = res["pseudo_rows"]
+        rows[-1]["held_toward_source"] = held_toward_source(res)
+        rows[-1]["interval_reach"] = interval_reach(res["interval"])
         if "effective_rows" in res:  # with cells: Kish's count over the design effect
             rows[-1]["effective_rows"] = float(res["effective_rows"])
         elif weights is not None:  # the alarm counts a weighted batch by Kish's size
@@ -231,6 +238,45 @@ def _baseline_error(args: argparse.Namespace, out: dict[str, Any], proba: np.nda
     return baseline_batch_standard_error(est, rows)
 
 
+def _batch_notes(out: dict[str, Any]) -> list[str]:
+    """The notes under the batch table that say what its marks mean: ``held`` (the estimate
+    kept near the source prevalence for lack of evidence, not a finding that the prevalence
+    is there) and an interval reaching 0 or 1 (a boundary, or no information at all)."""
+    batches = out["batches"]
+    lines = []
+    held = [b for b in batches if b.get("held_toward_source")]
+    if held:
+        rows = sorted(b["n_rows"] for b in held)
+        span = f"{rows[0]}" if rows[0] == rows[-1] else f"{rows[0]} to {rows[-1]}"
+        lines.append(
+            f"  note: held: in {len(held)} of {len(batches)} batches ({span} rows) the rows are too "
+            "few to move the estimate far from the source prevalence "
+            f"{out['source_prevalence']:.4f}: it is pulled toward it by "
+            f"{max(b['pseudo_rows'] for b in held):g} pseudo-rows (fewer where a shift shows) and "
+            "says only that the batch gives no firm evidence, not that its prevalence is near "
+            "the source one. 'rows alone' is the batch's own estimate without the pull; the "
+            "interval is that of the rows alone (the prevalences they allow) and holds both. "
+            f"The whole file's estimate ({out['prevalence']:.4f}) reads more rows; larger batches "
+            "are held less.")
+    reach = [b for b in batches if b.get("interval_reach")]
+    if reach:
+        whole = [b["batch"] for b in reach if b["interval_reach"] == "whole range"]
+        edge = len(reach) - len(whole)
+        parts = []
+        if edge:
+            parts.append(
+                f"{edge} batch{'es' if edge > 1 else ''} have an interval reaching 0 or 1 (the "
+                "rows allow a batch with no positives or only positives: the prevalence is "
+                "known on one side only)")
+        if whole:
+            names = ", ".join(whole[:5]) + (", ..." if len(whole) > 5 else "")
+            parts.append(
+                f"the interval of batch {names} is the whole range [0, 1]: its rows cannot place "
+                "the prevalence at all (too few, or scores that do not separate the classes)")
+        lines.append("  note: " + "; ".join(parts) + ". Use larger batches for a narrower one.")
+    return lines
+
+
 def _text(out: dict[str, Any], path: str, level: float) -> str:
     lines = [
         f"prevalence of {path}: {out['n_rows']} unlabelled rows, method {out['method']}",
@@ -246,6 +292,10 @@ def _text(out: dict[str, Any], path: str, level: float) -> str:
         f"  test of no shift      statistic {out['shift_statistic']:.4g}, "
         f"p-value {out['shift_pvalue']:.3g}",
     ]
+    if held_toward_source(out):
+        lines.append(
+            f"  note: held toward the source prevalence for lack of evidence ({out['pseudo_rows']:g} "
+            f"pseudo-rows); the rows alone give {out['ml_prevalence']:.4f}, inside the interval")
     if not out["converged"]:
         lines.append("  note: the estimate's iterations did not converge; treat it with care")
     if "alarm" in out:
@@ -256,10 +306,16 @@ def _text(out: dict[str, Any], path: str, level: float) -> str:
         lines.append("    batch        rows  prevalence  interval            rise   fall")
         for i, b in enumerate(out["batches"]):
             lo, hi = b["interval"]
-            mark = f"  ALARM ({fired[i]})" if i in fired else ""
+            marks = [f"ALARM ({fired[i]})"] if i in fired else []
+            if b.get("held_toward_source"):
+                marks.append(f"held (rows alone {b['ml_prevalence']:.4f})")
+            if b.get("interval_reach"):
+                marks.append(b["interval_reach"])
+            mark = "".join(f"  {m}" for m in marks)
             lines.append(f"    {b['batch'][:10]:<10} {b['n_rows']:>6}  {b['prevalence']:.4f}    "
                          f"[{lo:.4f}, {hi:.4f}]  {a['upper'][i]:5.2f}  {a['lower'][i]:5.2f}"
                          f"{mark}")
+        lines += _batch_notes(out)
         verdict = (f"first alarm after batch {a['first_alarm']} ({len(a['alarms'])} in all)"
                    if a["alarms"] else "no alarm")
         lines.append(

@@ -14,6 +14,7 @@ import numpy as np
 from ._progress import progress
 
 __all__ = ["prevalence_from_source", "prevalence_from_reference", "batch_alarm_json",
+           "held_toward_source", "interval_reach",
            "two_columns", "result_dict", "effective_rows",
            "kish_scaled", "reference_estimator", "source_baseline_standard_error"]
 
@@ -180,6 +181,12 @@ def prevalence_from_reference(
     )
     if res.interval is not None:
         out["interval"] = [float(res.interval[1, 0]), float(res.interval[1, 1])]
+    if res.ml_prior is not None:
+        # EM: the rows alone (no pull toward the source prevalence) and the pseudo-rows of the
+        # pull used for "prevalence"; on a small batch they say that the estimate was held
+        # near the source prevalence for lack of evidence (held_toward_source)
+        out["ml_prevalence"] = float(res.ml_prior[1])
+        out["pseudo_rows"] = float(res.pseudo_rows or 0.0)
     out["recalibrated"] = bool(recalibrate)
     out["n_reference_rows"] = int(ref_y.shape[0])
     if cells is not None:
@@ -370,3 +377,46 @@ def result_dict(prev, converged, method, n, source, test) -> dict[str, Any]:
         "shift_statistic": float(test.statistic),
         "shift_pvalue": float(test.pvalue),
     }
+
+
+HELD_MOVE = 0.01  # our rule: a pull of at least 0.01 on the prevalence is reported as "held"
+EDGE = 1e-3  # an interval end within this of 0 or 1 reaches the edge
+
+
+def held_toward_source(result: dict[str, Any]) -> bool:
+    """Whether the estimate was held toward the source prevalence for lack of evidence: the
+    pull of ``prior_strength`` pseudo-rows (EM with ``--reference``) moved it by at least
+    ``HELD_MOVE`` (0.01) from the rows-alone (maximum-likelihood) estimate.
+
+    Examples
+    --------
+    >>> held_toward_source({"prevalence": 0.47, "ml_prevalence": 0.62, "pseudo_rows": 20.0})
+    True
+    >>> held_toward_source({"prevalence": 0.62, "interval": [0.5, 0.7]})
+    False
+    """
+    ml = result.get("ml_prevalence")
+    return bool(ml is not None and result.get("pseudo_rows", 0.0) > 0
+                and abs(result["prevalence"] - ml) >= HELD_MOVE)
+
+
+def interval_reach(interval: list[float] | None) -> str | None:
+    """What an interval reaching an edge means, or None: ``"whole range"`` for [0, 1] (the rows
+    cannot place the prevalence), ``"reaches 0"`` / ``"reaches 1"`` where the rows allow a
+    batch with no positives / only positives (ends within 1e-3 of the edge).
+
+    Examples
+    --------
+    >>> interval_reach([0.0, 1.0]), interval_reach([0.489, 1.0]), interval_reach([0.2, 0.7])
+    ('whole range', 'reaches 1', None)
+    """
+    if interval is None:
+        return None
+    lo, hi = interval
+    if lo <= EDGE and hi >= 1.0 - EDGE:
+        return "whole range"
+    if hi >= 1.0 - EDGE:
+        return "reaches 1"
+    if lo <= EDGE:
+        return "reaches 0"
+    return None

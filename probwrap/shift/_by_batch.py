@@ -156,7 +156,14 @@ def prior_by_batch(
     score, :func:`probwrap.shift._cells.cell_design_rows`), ``prior``, ``lower``, ``upper`` (float, shape (k,) each), ``shift_statistic``,
     ``shift_pvalue`` (float), ``converged`` (bool) and ``class_shift_score`` (float, shape
     (k,): the signed root of each class's one-vs-rest shift test, :func:`class_shift_scores`;
-    roughly a standard normal per batch when nothing moved, for charting one class of many).
+    roughly a standard normal per batch when nothing moved, for charting one class of many),
+    ``ml_prior`` (float, shape (k,): the batch's rows alone, the maximum-likelihood estimate
+    without the pull toward the source prior; ``prior`` itself for methods other than EM) and
+    ``pseudo_rows`` (float: the pseudo-rows of that pull used for ``prior``, 0 without one;
+    ``PriorEstimate.pseudo_rows``). On a small batch ``prior`` is held near the source prior
+    for lack of evidence (20 pseudo-rows by default against the batch's rows; since
+    4 December 2026 the two fields say so), while ``lower`` and ``upper`` are the interval of
+    the rows alone (the shares they allow), widened only to hold ``prior``.
     ``table["prior"][:, 1]`` is the series of positive-class prevalences of a binary problem.
 
     Examples
@@ -220,6 +227,8 @@ def prior_by_batch(
         ("shift_pvalue", float),
         ("converged", bool),
         ("class_shift_score", float, (k,)),
+        ("ml_prior", float, (k,)),
+        ("pseudo_rows", float),
     ]
     table = np.zeros(len(uniq), dtype=dtype)
     rng = check_random_state(estimator.random_state)
@@ -251,6 +260,8 @@ def prior_by_batch(
             interval[:, 1], res.shift_statistic, res.shift_pvalue, res.converged,
             class_shift_scores(estimator, p[rows], w[rows],
                                cells=None if codes is None else codes[rows]),
+            res.prior if res.ml_prior is None else res.ml_prior,
+            0.0 if res.pseudo_rows is None else float(res.pseudo_rows),
         )
     if conflicts:
         _warn_conflicts(conflicts, len(order))
