@@ -1345,8 +1345,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
         Does not change the wrapper. Returns the structured array of
         :func:`probwrap.shift.prior_by_batch` (fields ``batch``, ``n_rows``, ``prior``,
-        ``lower``, ``upper``, ``shift_statistic``, ``shift_pvalue``, ``converged``), with
-        columns of ``prior`` in ``classes_`` order.
+        ``lower``, ``upper``, ``shift_statistic``, ``shift_pvalue``, ``converged``, and in
+        memory ``ml_prior`` and ``pseudo_rows``: on a small batch ``prior`` is held near the
+        source prior for lack of evidence, ``ml_prior`` is the rows alone), with columns of
+        ``prior`` in ``classes_`` order.
 
         For Dask input each Dask block is one batch (``batches`` must be None; ``batch_size``
         may be given if it equals the block length), estimated on the worker that holds it.

@@ -124,8 +124,8 @@ def test_whole_range_interval_is_explained():
          "interval_reach": "whole range", "held_toward_source": False}]}
     notes = _batch_notes(out)
     assert len(notes) == 1
-    assert "batch 7 is the whole range [0, 1]" in notes[0]
-    assert "cannot place the prevalence at all" in notes[0]
+    assert "interval of batch 7 is the whole range [0, 1]" in notes[0]
+    assert "cannot rule out any prevalence" in notes[0]
 
 
 def test_prior_by_batch_fields_match_the_ml_root(cancer):

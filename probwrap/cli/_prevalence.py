@@ -265,14 +265,17 @@ def _batch_notes(out: dict[str, Any]) -> list[str]:
         parts = []
         if edge:
             parts.append(
-                f"{edge} batch{'es' if edge > 1 else ''} have an interval reaching 0 or 1 (the "
+                f"{edge} batch{'es have' if edge > 1 else ' has'} an interval reaching 0 or 1 (the "
                 "rows allow a batch with no positives or only positives: the prevalence is "
                 "known on one side only)")
         if whole:
             names = ", ".join(whole[:5]) + (", ..." if len(whole) > 5 else "")
+            one = len(whole) == 1
             parts.append(
-                f"the interval of batch {names} is the whole range [0, 1]: its rows cannot place "
-                "the prevalence at all (too few, or scores that do not separate the classes)")
+                f"the interval{'' if one else 's'} of batch{'' if one else 'es'} {names} "
+                f"{'is' if one else 'are'} the whole range [0, 1]: the batch's rows alone cannot "
+                "rule out any prevalence at the interval's level (too few rows, a rare class, or "
+                "scores that barely separate the classes)")
         lines.append("  note: " + "; ".join(parts) + ". Use larger batches for a narrower one.")
     return lines
 
