@@ -191,6 +191,22 @@ _PASS_OVER_TEMPERATURE_BELOW_SHARES = True
 #: that predicts an exact 0 for an event that happens is heavily penalised but stays finite.
 _LOG_LOSS_FLOOR = 1e-15
 
+#: Two classes: where the one-standard-error rule would keep temperature scaling for being
+#: simpler while Platt scaling scored lower on the folds (and is itself within a standard error
+#: of the best map), Platt scaling is kept instead when the temperature, fitted on all held-out
+#: rows, leaves their mean probability off their base rate by more than this many standard
+#: errors (the mean-calibration test, calibration-in-the-large: Cox 1958; the standard error
+#: under the fitted probabilities, sqrt(sum w_i^2 q_i (1 - q_i)) / sum w_i). Temperature
+#: scaling has no intercept: its fit solves sum w_i (y_i - q_i) s_i = 0 for the scores s_i, not
+#: sum w_i (y_i - q_i) = 0, so a model trained on another base rate keeps its shift. R's
+#: carData::Greene, logistic regression fitted on 115 rows and frozen, 40 calibration rows:
+#: temperature (T = 1.12) kept within a standard error of Platt's lower score, mean probability
+#: 2.2 standard errors off, test log loss 0.676 against Platt's 0.604 and scikit-learn's
+#: sigmoid's 0.608. Measured on the binary cells of benchmarks/hunt21-23_sweep.py
+#: (docs/small_data.md, twenty-third session, "temperature without an intercept"); ``inf``
+#: switches the rule off.
+_BASE_RATE_SE = 1.0
+
 
 def _boundary_of(cal: Any) -> str | None:
     """Why a fitted map (or any map of a one-vs-rest list) sits at a boundary, or None."""
@@ -605,6 +621,11 @@ class _AutoChoice:
                     and self._temperature_short_of_shares(means, scores, y, w, notes)):
                 continue
             if loss - means[best] <= se:
+                if (name == "temperature" and binary and "platt" in eligible
+                        and scores_out["platt"][0] < loss
+                        and scores_out["platt"][0] - means[best] <= scores_out["platt"][1]
+                        and self._temperature_off_base_rate(scores, y, w, notes)):
+                    return "platt", scores_out, notes
                 return name, scores_out, notes
         fallback = self._fallback_name(names, binary)
         reason = (
@@ -615,6 +636,35 @@ class _AutoChoice:
         warnings.warn(f"CalibrationWrapper(method='auto'): {reason}.", UserWarning, stacklevel=3)
         notes.setdefault(fallback, "chosen as the fallback: no candidate was eligible")
         return fallback, scores_out, notes
+
+    def _temperature_off_base_rate(self, scores, y, w, notes) -> bool:
+        """True (and noted) when temperature scaling, fitted on all held-out rows, leaves their
+        mean probability off their base rate by more than ``_BASE_RATE_SE`` standard errors
+        (binary ``scores``, class indices ``y``, weights ``w``)."""
+        if not np.isfinite(_BASE_RATE_SE):
+            return False
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                cal = self._fit_map(TemperatureMap(), scores, y, w)
+            except (ValueError, FloatingPointError, np.linalg.LinAlgError):
+                return False
+            q = self._apply_map(cal, scores)[:, 1]
+        wn = w / w.sum()
+        t = (y == 1).astype(float)
+        gap = float(wn @ (t - q))
+        se = float(np.sqrt(wn**2 @ (q * (1 - q))))
+        if not se > 0 or abs(gap) <= _BASE_RATE_SE * se:
+            return False
+        text = (
+            f"passed over for Platt scaling (lower cross-validated log loss): fitted on all "
+            f"held-out rows (temperature {float(cal.temperature_):.3g}, no intercept) the mean "
+            f"probability of class {plain(self.classes_[1])!r} is {float(wn @ q):.3g} against "
+            f"the base rate {float(wn @ t):.3g}, {abs(gap) / se:.2f} standard errors off"
+        )
+        notes["temperature"] = text if "temperature" not in notes else (
+            notes["temperature"] + "; " + text)
+        return True
 
     def _temperature_short_of_shares(self, means, scores, y, w, notes) -> bool:
         """True (and noted) when the one-standard-error rule passes over temperature scaling:

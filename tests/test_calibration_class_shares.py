@@ -62,6 +62,8 @@ def test_frozen_model_without_ranking_gets_the_class_shares(monkeypatch):
     assert ours < 1.02 * sk  # 0.538 against 0.534
     # the map chosen without the class shares (the rule off) did harm: temperature, 0.629
     monkeypatch.setattr(auto_module, "_CLASS_SHARES_MARGIN_SE", float("inf"))
+    # the base-rate rule (twenty-third session) would also catch this draw
+    monkeypatch.setattr(auto_module, "_BASE_RATE_SE", float("inf"))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         before = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc, yc)

@@ -76,6 +76,8 @@ def test_ghq_naive_bayes_softened_temperature_passed_over(monkeypatch):
     # before: the temperature kept within a standard error of Platt's score, T = 40 (every
     # probability near 1/2), test log loss 0.667, 1.85x the sigmoid's
     monkeypatch.setattr(auto_module, "_PASS_OVER_TEMPERATURE_BELOW_SHARES", False)
+    # the base-rate rule (twenty-third session) would also catch this draw
+    monkeypatch.setattr(auto_module, "_BASE_RATE_SE", float("inf"))
     old = _fit(Xa, ya, wa)
     assert old.method_ == "temperature" and old.calibrator_.temperature_ > 10
     assert _log_loss(old, Xb, yb, wb) > 1.5 * sk
