@@ -1037,8 +1037,6 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         )
 
         est = self.prior_estimator_
-        if est.n_resamples == 0 or np.asarray(proba).shape[0] < 2:
-            return None
         counts = getattr(self, "_labelled_repeats", None)
         if counts is None or est.n_resamples == 0 or np.asarray(proba).shape[0] < 2:
             return
