@@ -32,7 +32,11 @@ them), best with ``--sizes 50,200 --draws 1``. Base models and splits as in ``be
 Run: ``nice python benchmarks/calibration_tiny.py --sets grid --draws 5 --save tiny_grid.json``
 (the docs' run: about 20 minutes on a shared machine; ``--sets fresh --draws 3`` about 10), then ``python benchmarks/calibration_tiny.py --load tiny_grid.json
 --rules``. ``--sizes 20,40`` and ``--draws 10`` set the grid; ``--part I/N`` runs every N-th
-data set starting at I.
+data set starting at I. ``--platt-proba`` also records Platt scaling of the probability
+(``benchmarks/probability_sigmoid.py``; pass it with ``--load`` too), replayed by the
+``platt_proba`` rules; ``--rule-set WORDS`` keeps the rules whose label has one of them,
+``--models WORDS`` the draws of those base models, ``--vs sigmoid`` compares with scikit-learn's
+sigmoid instead of its best method.
 """
 
 from __future__ import annotations
@@ -97,7 +101,12 @@ def one_draw(model, X_cal, y_cal, X_te, y_te, classes, seed) -> dict | None:
     k = len(classes)
     rec: dict = {"k": k, "proba": proba, "test": {}, "sk": {}}
     rec["own"] = B.log_loss(y_te, model.predict_proba(X_te)) if proba else None
-    names = [nm for nm in (BINARY if k == 2 else MULTI) if proba or nm != "identity"]
+    names = [nm for nm in (BINARY if k == 2 else MULTI)
+             if proba or nm not in ("identity", "platt_proba")]
+    if proba and k == 2:  # how coarse the held-out probabilities are (platt_proba rules)
+        p_cal = model.predict_proba(X_cal)[:, 1]
+        rec["has01"] = bool(np.any((p_cal == 0.0) | (p_cal == 1.0)))
+        rec["distinct"] = int(np.unique(p_cal).size)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         try:
@@ -217,6 +226,13 @@ def _replay(rec: dict, rule: dict) -> str:
     cv = rec["cv"]
     binary = rec["k"] == 2
     names = [nm for nm in cv["scored"] if nm != "identity" or rule.get("identity")]
+    pp = rule.get("pp")  # Platt scaling of the probability: None (left out), "always", "01"
+    coarse = bool(rec.get("has01")) or rec.get("distinct", 1e9) <= rule.get(
+        "pp_distinct", 0.0) * len(cv["y"])
+    if pp is None or (pp != "always" and not coarse):
+        names = [nm for nm in names if nm != "platt_proba"]
+    elif rule.get("pp_replace"):
+        names = [nm for nm in names if nm != "platt"]
     if binary and rule.get("no_temperature"):
         names = [nm for nm in names if nm != "temperature"] or names
     y = np.asarray(cv["y"])
@@ -251,7 +267,10 @@ def _replay(rec: dict, rule: dict) -> str:
 
     def _complexity(nm: str) -> float:
         c = CALIBRATION_METHODS[nm]().complexity
-        if (binary and platt_first is not False and nm == "platt"
+        if nm == "platt_proba" and rule.get("pp_first"):
+            return c - 0.1  # before Platt of the log-odds (and temperature's order kept)
+        if (binary and platt_first is not False
+                and (nm == "platt" or (nm == "platt_proba" and rule.get("pp_replace")))
                 and int(np.sum(w > 0)) >= rule.get("platt_first_min_rows", 0)
                 and share < max_share):
             c = CALIBRATION_METHODS["temperature"]().complexity - 0.5  # just before temperature
@@ -322,12 +341,20 @@ RULES = {
                                                 "platt_first_max_share": 0.20},
     "binary: Platt first below 30 % minority": {"platt_first": True,
                                                 "platt_first_max_share": 0.30},
+    "platt_proba always": {"pp": "always"},
+    "platt_proba on 0/1": {"pp": "01"},
+    "platt_proba on 0/1 or distinct<=50%": {"pp": "01", "pp_distinct": 0.5},
+    "platt_proba on 0/1 or distinct<=75%": {"pp": "01", "pp_distinct": 0.75},
+    "platt_proba replaces platt on 0/1": {"pp": "01", "pp_replace": True},
+    "platt_proba replaces platt always": {"pp": "always", "pp_replace": True},
+    "platt_proba first on 0/1": {"pp": "01", "pp_first": True},
     "Platt first <20 % + order 30/class": {"platt_first": True, "platt_first_max_share": 0.20,
                                           "order_min_class": 30},
 }
 
 
-def evaluate(recs: list[dict], rules: dict) -> None:
+def evaluate(recs: list[dict], rules: dict, ref: str = "") -> None:
+    """``ref``: one of scikit-learn's methods to compare with (default: its best in hindsight)."""
     print(f"{len(recs)} draws; sizes {sorted({r['n_cal'] for r in recs})}")
     # check: the replayed rule of this code matches auto as it was when the draws were recorded
     agree = sum(replay(r, {}) == r["auto"][0] for r in recs)
@@ -345,7 +372,8 @@ def evaluate(recs: list[dict], rules: dict) -> None:
             c = cells[(r["data"], r["model"], r["n_cal"])]
             c["mine"].append(loss)
             for m, v in r["sk"].items():
-                c["sk"][m].append(v)
+                if not ref or m == ref:
+                    c["sk"][m].append(v)
             if r["own"] is not None:
                 harm_n += 1
                 harm += loss > 1.05 * r["own"]
@@ -387,6 +415,12 @@ def harm_table(recs: list[dict]) -> None:
 
 def main(argv: list[str]) -> None:
     opt = {a: argv[i + 1] for i, a in enumerate(argv[:-1]) if a.startswith("--")}
+    if "--platt-proba" in argv:
+        # Platt scaling of the probability recorded among the candidates (benchmark-only map,
+        # benchmarks/probability_sigmoid.py); the "platt_proba" rules replay it
+        import probability_sigmoid  # noqa: F401
+
+        BINARY.insert(BINARY.index("platt") + 1, "platt_proba")
     if "--load" in opt:
         recs = []
         for f in opt["--load"].split(","):
@@ -398,8 +432,15 @@ def main(argv: list[str]) -> None:
                    opt.get("--only", ""))
         if "--save" in opt:
             Path(opt["--save"]).write_text(json.dumps(recs))
+    if "--models" in opt:  # e.g. "forest": only the draws of base models whose name has it
+        recs = [r for r in recs if any(m in r["model"] for m in opt["--models"].split(","))]
+    if "--rule-set" in opt:  # only the rules whose label contains one of these words
+        rules = {k: v for k, v in RULES.items()
+                 if k == "as auto is now" or any(p in k for p in opt["--rule-set"].split(","))}
+    else:
+        rules = RULES
     if "--rules" in argv or "--load" not in opt:
-        evaluate(recs, RULES)
+        evaluate(recs, rules, opt.get("--vs", ""))
         harm_table(recs)
 
 
