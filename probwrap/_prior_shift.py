@@ -902,7 +902,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             (docs/scale.md, "Limits of the Dask path"). None (rows in
             memory): every row is its own unit; where the rows repeat one another (identical
             posteriors) far more often than independent draws of the labelled classes do, a
-            :class:`~probwrap.shift.RepeatedRowsWarning` says so (since 4 December 2026), and
+            :class:`~probwrap.shift.RepeatedRowsWarning` says so (since 4 December 2026; for
+            at most 20,000 Dask or Spark rows too since 5 December 2026, not beyond), and
             cells grouping the identical rows count each group once.
 
         Returns
@@ -956,8 +957,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             from .scale._entry import estimate_multiclass_target
 
             scorer = self._fold_scorer()
-            res = estimate_multiclass_target(est, self.estimator_, X, sample_weight, rs,
-                                             folds=scorer, cells=cells)
+            # (a small set's rows come to the client: their repeats are judged as in memory,
+            # RepeatedRowsWarning; more rows are not, docs/scale.md)
+            res = estimate_multiclass_target(
+                est, self.estimator_, X, sample_weight, rs, folds=scorer, cells=cells,
+                check_rows=None if cells is not None else self._warn_repeats_distributed)
             # (the fold models scored the rows where they live whenever there are any, and
             # every interval computed here reads them: a small set's in-memory estimate with
             # fold_proba, any interval; more rows, EM's class-moment interval; no warning)
@@ -983,6 +987,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 fold_replicates=0 if self.interval == "score" else int(est.n_resamples),
                 cells=cells is not None,
             )
+            if target is None and cells is None:
+                # a small set came back as rows (with the fold models' posteriors): its repeats
+                # are judged as in memory (since 5 December 2026); more rows come back as a
+                # tally, whose bins keep no identical rows (docs/scale.md)
+                self._warn_repeats(proba, folds, sample_weight)
         else:
             proba = self._inner_output(X, "predict_proba")
             if sample_weight is not None:
@@ -1014,7 +1023,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             interval = res.interval
         return self._finish_adapt(res, interval)
 
-    def _warn_repeats(self, proba: np.ndarray, folds: Any, sample_weight: Any) -> None:
+    def _warn_repeats_distributed(self, proba: np.ndarray, folds: Any,
+                                  sample_weight: Any) -> None:
+        """:meth:`_warn_repeats` from inside the scale layer (one frame deeper)."""
+        self._warn_repeats(proba, folds, sample_weight, stacklevel=6)
+
+    def _warn_repeats(self, proba: np.ndarray, folds: Any, sample_weight: Any,
+                      stacklevel: int = 3) -> None:
         """Warn (:class:`~probwrap.shift.RepeatedRowsWarning`) when the unlabelled rows repeat
         one another far more often than independent draws of the labelled classes do; nothing
         where the labelled rows were not kept as rows.
@@ -1027,39 +1042,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         (docs/prior_shift.md, "Confident misses on real sets"). The estimate, the interval and
         the test are unchanged: ``cells`` (each group of identical rows one cell) counts the
         repeats as such, which the user decides."""
-        from .shift import em_prior
-        from .shift._repeats import (
-            RepeatedRowsWarning,
-            collision_bound,
-            excess_repeats,
-            identical_row_codes,
-            repeats_beyond_chance,
-        )
+        from .shift._repeats import RepeatedRowsWarning, repeats_of_rows, rows_repeat_message
 
-        est = self.prior_estimator_
-        counts = getattr(self, "_labelled_repeats", None)
-        if counts is None or est.n_resamples == 0 or np.asarray(proba).shape[0] < 2:
+        found = repeats_of_rows(self.prior_estimator_, getattr(self, "_labelled_repeats", None),
+                                proba, folds, sample_weight)
+        if found is None:
             return
-        codes = identical_row_codes(proba, *(folds or []))
-        if int(codes.max()) + 1 == codes.shape[0]:
-            return  # no row repeats
-        # the shares of the mix: the source's and the rows' maximum-likelihood estimate (the
-        # rate of coincidences differs by class; the larger of the two is taken)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            ml = em_prior(est.calibrate(proba), est.source_prior_,
-                          sample_weight=sample_weight).prior
-        rate = max(collision_bound(*counts, est.source_prior_), collision_bound(*counts, ml))
-        observed, expected = excess_repeats(codes, sample_weight, rate)
-        if not repeats_beyond_chance(observed, expected, codes, sample_weight):
-            return
-        n = codes.shape[0]
-        groups = int(codes.max()) + 1
         warnings.warn(
-            f"adapt: {n - groups} of the {n} unlabelled rows repeat another row exactly (the same "
-            f"posteriors; {groups} distinct rows), a design effect of {observed:.3g} where "
-            f"independent draws of these classes give at most {expected:.3g} (from how often "
-            "labelled rows coincide). The shift test and target_prior_interval_ count every "
+            f"adapt: {rows_repeat_message(found)}. The shift test and target_prior_interval_ "
+            "count every "
             "row as an independent draw; rows resampled with replacement from a pool, or copied "
             "records, are not, and the interval is then too narrow (it can miss the share with "
             "no other warning). If the repeats are copies, adapt on the distinct rows, or pass "
@@ -1067,7 +1058,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             "numpy.unique(X, axis=0, return_inverse=True)[1]) so that each group counts once "
             "(docs/prior_shift.md, 'Confident misses on real sets').",
             RepeatedRowsWarning,
-            stacklevel=3,
+            stacklevel=stacklevel,
         )
 
     @staticmethod
@@ -1343,10 +1334,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
         Does not change the wrapper. Returns the structured array of
         :func:`probwrap.shift.prior_by_batch` (fields ``batch``, ``n_rows``, ``prior``,
-        ``lower``, ``upper``, ``shift_statistic``, ``shift_pvalue``, ``converged``, and in
-        memory ``ml_prior`` and ``pseudo_rows``: on a small batch ``prior`` is held near the
-        source prior for lack of evidence, ``ml_prior`` is the rows alone), with columns of
-        ``prior`` in ``classes_`` order.
+        ``lower``, ``upper``, ``shift_statistic``, ``shift_pvalue``, ``converged``,
+        ``class_shift_score``, ``ml_prior`` and ``pseudo_rows``: on a small batch ``prior`` is
+        held near the source prior for lack of evidence, ``ml_prior`` is the rows alone; on
+        Dask and Spark rows too since 5 December 2026), with columns of ``prior`` in
+        ``classes_`` order.
 
         For Dask input each Dask block is one batch (``batches`` must be None; ``batch_size``
         may be given if it equals the block length), estimated on the worker that holds it.
@@ -1363,6 +1355,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             Once per call, naming the batches in which the interval of a class share reaches
             more than 0.25 from the batch's estimate (as ``adapt`` warns for its one estimate;
             since 4 December 2026).
+        RepeatedRowsWarning
+            Once per call, naming the batches whose rows repeat one another far beyond chance,
+            each judged as ``adapt`` judges its rows (no ``cells`` given; in memory, on Dask
+            blocks and Spark batches alike; since 5 December 2026).
         """
         check_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to monitor")
@@ -1389,16 +1385,51 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         est = self.prior_estimator_
         source = getattr(self, "_source_tally", None)
         if source is None or source.n_replicates == 0 or est.n_resamples == 0:
+            folds = self._fold_proba(X)
             table = prior_by_batch(
                 est, proba, batches, batch_size=batch_size, sample_weight=sample_weight,
-                fold_proba=self._fold_proba(X), cells=cells,
+                fold_proba=folds, cells=cells,
             )
+            if cells is None:
+                # each batch's rows repeating one another beyond chance, as adapt judges its
+                # rows (RepeatedRowsWarning; since 5 December 2026)
+                self._warn_batch_repeats(table, proba, batches, batch_size, sample_weight,
+                                         folds)
         else:
             # Fitted on Dask input: the labelled rows are a tally, so each batch's interval is
             # a Poisson bootstrap over the tally's replicates and the batch's rows.
             table = tallied_monitor(est, source, proba, batches, batch_size, sample_weight)
         self._warn_imprecise_batches(table)
         return table
+
+    def _warn_batch_repeats(self, table: np.ndarray, proba: np.ndarray, batches: Any,
+                            batch_size: Any, sample_weight: Any, folds: Any) -> None:
+        """``monitor``'s :class:`~probwrap.shift.RepeatedRowsWarning` (rows in memory): once,
+        naming the batches whose rows repeat one another beyond chance, each batch judged by
+        the rule ``adapt`` applies to its rows (:func:`probwrap.shift._repeats.repeats_of_rows`;
+        Dask workers and Spark executors apply it to their batches alike). Nothing where the
+        labelled rows were not kept as rows."""
+        counts = getattr(self, "_labelled_repeats", None)
+        if counts is None or table.shape[0] == 0:
+            return
+        from .scale._entry import warn_batch_repeats
+        from .shift._repeats import repeats_of_rows
+
+        n = proba.shape[0]
+        if batch_size is not None:
+            labels = np.arange(n) // int(batch_size)
+        else:
+            labels = np.asarray(batches)
+            labels = labels.astype(str) if labels.dtype == object else labels
+        w = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
+        found = []
+        for b in table["batch"]:
+            rows = labels == b
+            found.append((b, repeats_of_rows(
+                self.prior_estimator_, counts, proba[rows],
+                None if folds is None else [np.asarray(f)[rows] for f in folds],
+                None if w is None else w[rows])))
+        warn_batch_repeats(found, table.shape[0], stacklevel=4)
 
     def _warn_imprecise_batches(self, table: np.ndarray) -> None:
         """``monitor``'s :class:`~probwrap.shift.ImprecisePriorWarning`: once per call, naming

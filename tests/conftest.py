@@ -66,6 +66,7 @@ XDIST_GROUPS = {
     "tests/test_spark_refit.py::": "spark",
     "tests/test_spark_driver_errors.py::": "spark",
     "tests/test_spark_adapt_parity.py::": "spark",
+    "tests/test_spark_repeats_monitor.py::": "spark",
 }
 
 

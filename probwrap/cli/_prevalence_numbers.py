@@ -11,6 +11,8 @@ from typing import Any
 
 import numpy as np
 
+from probwrap.shift._by_batch import HELD_MOVE
+
 from ._progress import progress
 
 __all__ = ["prevalence_from_source", "prevalence_from_reference", "batch_alarm_json",
@@ -174,6 +176,10 @@ def prevalence_from_reference(
                               seed=seed, reference_weight=reference_weight,
                               reference_cells=reference_cells)
     res = est.estimate(two_columns(proba), sample_weight=sample_weight, cells=cells)
+    if cells is None:
+        # rows repeating one another beyond the chance the reference rows show (resampled or
+        # copied rows): the rule of PriorShiftWrapper.adapt and monitor (since 5 December 2026)
+        warn_repeated_scores(est, proba, ref_proba, ref_y, sample_weight)
     # the estimator's two-sample score test (it carries the reference rows' error too)
     test = ShiftTestResult(res.shift_statistic, res.shift_pvalue, 1)
     out = result_dict(
@@ -202,6 +208,37 @@ def prevalence_from_reference(
     if reference_cells is not None:
         out["reference_effective_rows"] = float(est.n_source_design_rows_)
     return out
+
+
+def warn_repeated_scores(est: Any, proba: np.ndarray, ref_proba: np.ndarray, ref_y: np.ndarray,
+                         sample_weight: np.ndarray | None = None) -> None:
+    """A :class:`~probwrap.shift.RepeatedRowsWarning` when the unlabelled scores repeat one
+    another (exactly equal) far more often than independent draws do, by the rule of
+    ``PriorShiftWrapper.adapt`` (:func:`probwrap.shift._repeats.repeats_of_rows`): the chance
+    rate read from how often reference scores of each pair of classes coincide. Nothing
+    without resamples (``est.n_resamples == 0``, as the wrapper). By batch, the warning of each
+    batch is shown once with how many more batches had it (``_by_batch``)."""
+    from probwrap.shift._repeats import (
+        RepeatedRowsWarning,
+        labelled_repeat_counts,
+        repeats_of_rows,
+        rows_repeat_message,
+    )
+
+    counts = labelled_repeat_counts(two_columns(ref_proba), np.asarray(ref_y).astype(int), 2)
+    found = repeats_of_rows(est, counts, two_columns(proba), None, sample_weight)
+    if found is None:
+        return
+    warnings.warn(
+        rows_repeat_message(found).replace("posteriors", "score")
+        + ". The interval and the test of no shift count every row as an independent draw; "
+        "rows resampled with replacement from a pool, or copied records, are not, and the "
+        "interval is then too narrow (it can miss the prevalence with no other warning). If "
+        "the repeats are copies, drop them, or give --cell-column with one label per group of "
+        "identical rows so that each group counts once",
+        RepeatedRowsWarning,
+        stacklevel=3,
+    )
 
 
 def reference_estimator(
@@ -379,7 +416,8 @@ def result_dict(prev, converged, method, n, source, test) -> dict[str, Any]:
     }
 
 
-HELD_MOVE = 0.01  # our rule: a pull of at least 0.01 on the prevalence is reported as "held"
+# HELD_MOVE (probwrap.shift._by_batch, our rule): a pull of at least 0.01 on the prevalence is
+# reported as "held"; the HTML report's batch tables mark the same batches (held_near_source)
 EDGE = 1e-3  # an interval end within this of 0 or 1 reaches the edge
 
 

@@ -442,18 +442,19 @@ def dask_predict(method: Any, X: Any, n_columns: int | None, dtype: Any = float)
 def _monitor_block(shared, seed, Xb, wb):
     """Prior estimate of one block on the worker that holds it (a block fits in memory).
 
-    ``shared``: ``(model, prior estimator, labelled tally or None, fold scorer or None)``, one
-    object of the task graph that every block's task reads (sent to each worker once)."""
+    ``shared``: ``(model, prior estimator, labelled tally or None, fold scorer or None,
+    labelled repeat counts or None)``, one object of the task graph that every block's task
+    reads (sent to each worker once)."""
     from .._validation import check_sample_weight
     from ._blocks import n_block_rows, predict_block
 
-    estimator, est, source, folds = shared
+    estimator, est, source, folds, counts = shared
     if n_block_rows(Xb) == 0:  # an empty partition: no batch (left out, with a warning)
         return None
     proba = predict_block(estimator, "predict_proba", Xb, est.n_classes_)
     fold_proba = None if folds is None else list(folds.fold_proba(Xb))
     return monitor_proba(est, source, seed, proba, check_sample_weight(wb, proba.shape[0]),
-                         fold_proba)
+                         fold_proba, counts)
 
 
 #: One batch's estimate at a time per process records its warnings (``warnings.catch_warnings``
@@ -461,7 +462,7 @@ def _monitor_block(shared, seed, Xb, wb):
 _RECORDING = threading.Lock()
 
 
-def monitor_proba(est, source, seed, proba, w, fold_proba=None):
+def monitor_proba(est, source, seed, proba, w, fold_proba=None, counts=None):
     """One row of a monitor table from a batch's probabilities and weights (Dask or Spark),
     the power of two the batch's weights were divided by (1.0 unless they lie beyond about
     1e+-77, whose sums of squares would overflow or underflow; a batch's estimate does not
@@ -469,11 +470,20 @@ def monitor_proba(est, source, seed, proba, w, fold_proba=None):
     ``[(category, message), ...]``: the client raises them once per condition for the whole
     table (:func:`warn_monitor_batches`), not once per batch on whichever worker ran it.
     ``fold_proba``: the batch's posteriors from each fold model of a base model refit on the
-    labelled rows (read as in memory, ``prior_by_batch(fold_proba=...)``)."""
+    labelled rows (read as in memory, ``prior_by_batch(fold_proba=...)``).
+
+    ``counts``: the labelled rows' repeat counts (``PriorShiftWrapper._labelled_repeats``;
+    None: not kept as rows): the fourth entry returned is then the batch's
+    :func:`probwrap.shift._repeats.repeats_of_rows` (None where its rows do not repeat beyond
+    chance), judged on the batch's rows as ``monitor`` judges a batch in memory; the client
+    raises one :class:`~probwrap.shift.RepeatedRowsWarning` for the table."""
+    from ..shift._repeats import repeats_of_rows
+
     with _RECORDING, warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         row, unit = _monitor_row(est, source, seed, proba, w, fold_proba)
-    return row, unit, [(c.category, str(c.message)) for c in caught]
+        repeats = repeats_of_rows(est, counts, proba, fold_proba, w)
+    return row, unit, [(c.category, str(c.message)) for c in caught], repeats
 
 
 def _condition(category: type, message: str) -> tuple:
@@ -532,9 +542,12 @@ def _monitor_row(est, source, seed, proba, w, fold_proba=None):
     from ..shift import class_shift_scores
 
     n_eff = float(w.sum() ** 2 / np.dot(w, w)) if w.size else 0.0  # Kish, as prior_by_batch
+    # the rows alone and the pull toward the source prior used, as prior_by_batch gives them
+    ml = res.prior if res.ml_prior is None else res.ml_prior
+    pseudo = 0.0 if res.pseudo_rows is None else float(res.pseudo_rows)
     return (proba.shape[0], n_eff, res.prior, interval[:, 0], interval[:, 1],
             res.shift_statistic, res.shift_pvalue, res.converged,
-            class_shift_scores(est, proba, w)), unit
+            class_shift_scores(est, proba, w), ml, pseudo), unit
 
 
 def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weight: Any):
@@ -570,7 +583,8 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
     # the models and the estimator as one object of the graph: sent to each worker once, not
     # with every block's task (a refit base model brings its fold models along)
     shared = dask.delayed(
-        (owner.estimator_, est, source, owner._fold_scorer()),
+        (owner.estimator_, est, source, owner._fold_scorer(),
+         getattr(owner, "_labelled_repeats", None)),
         pure=True, traverse=False,
     )
     call = dask.delayed(_monitor_block, pure=True)
@@ -588,6 +602,8 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
         ("shift_pvalue", float),
         ("converged", bool),
         ("class_shift_score", float, (k,)),
+        ("ml_prior", float, (k,)),
+        ("pseudo_rows", float),
     ]
     empty = [i for i, r in enumerate(rows) if r is None]
     if empty:
@@ -601,11 +617,25 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
     if not kept:
         raise ValueError("`X` has no rows; monitor needs at least one row.")
     table = np.zeros(len(kept), dtype=dtype)
-    for j, (i, (r, _, _)) in enumerate(kept):
+    for j, (i, (r, _, _, _)) in enumerate(kept):
         table[j] = (i, *r)
-    warn_monitor_units([u for _, (_, u, _) in kept])
-    warn_monitor_batches([(i, caught) for i, (_, _, caught) in kept], len(kept))
+    warn_monitor_units([u for _, (_, u, _, _) in kept])
+    warn_monitor_batches([(i, caught) for i, (_, _, caught, _) in kept], len(kept))
+    warn_batch_repeats([(i, found) for i, (_, _, _, found) in kept], len(kept))
     return table
+
+
+def warn_batch_repeats(per_batch: list, n_batches: int, *, stacklevel: int = 5) -> None:
+    """``monitor``'s one :class:`~probwrap.shift.RepeatedRowsWarning` for the batches whose
+    rows repeat one another beyond chance; ``per_batch``: ``[(batch label,
+    repeats_of_rows(...) or None), ...]`` in table order (the same words in memory, on Dask
+    and on Spark: :func:`probwrap.shift._repeats.batch_repeats_message`)."""
+    from ..shift._repeats import RepeatedRowsWarning, batch_repeats_message
+
+    found = [(plain(b), f) for b, f in per_batch if f is not None]
+    if found:
+        warnings.warn(batch_repeats_message(found, n_batches), RepeatedRowsWarning,
+                      stacklevel=stacklevel)
 
 
 def warn_monitor_units(units: list) -> None:

@@ -18,7 +18,7 @@ from typing import Any
 from . import _dask, _multiclass, _multiclass_wrappers, _rows
 from ._bootstrap import tally_cutoff_interval, tally_exact_interval, tally_prior_interval
 from ._build import tally_scores
-from ._dask import owner_resolution
+from ._dask import owner_resolution, warn_batch_repeats
 from ._tally import _check_resolution as check_resolution
 from ._tally import replicate_seed
 
@@ -40,6 +40,7 @@ __all__ = [
     "tally_prior_interval",
     "tally_scores",
     "unlabelled_proba_from_dask",
+    "warn_batch_repeats",
 ]
 
 
@@ -113,9 +114,11 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None,
-                               random_state: Any = None, folds: Any = None, cells: Any = None):
+                               random_state: Any = None, folds: Any = None, cells: Any = None,
+                               check_rows: Any = None):
     return _multiclass.estimate_multiclass_target(est, estimator, X, sample_weight, random_state,
-                                                  folds=folds, cells=cells)
+                                                  folds=folds, cells=cells,
+                                                  check_rows=check_rows)
 
 
 def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, template: Any):

@@ -586,7 +586,8 @@ def _refit_folds(est: Any, folds: Any) -> tuple | None:
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None,
-                               random_state: Any = None, folds: Any = None, cells: Any = None):
+                               random_state: Any = None, folds: Any = None, cells: Any = None,
+                               check_rows: Any = None):
     """Prior estimate (a :class:`probwrap.shift.PriorEstimate`) of unlabelled multiclass Dask or
     Spark rows.
 
@@ -601,6 +602,10 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
 
     ``cells`` (one cell label per row, in the rows' order): read by the in-memory estimate of a
     small set; more rows are refused (:func:`probwrap.scale._rows.refuse_cells`).
+
+    ``check_rows`` (a small set only): called as ``check_rows(proba, fold_proba, weights or
+    None)`` with the rows that came to the client before they are estimated (the wrapper's
+    check of repeated rows, as in memory).
     """
     from ..shift import PriorEstimate, acc_prior, bbse_prior
 
@@ -629,6 +634,8 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
                 p, w = rows.map_reduce(_kept_target, estimator).arrays
                 if unit != 1.0:
                     w = w / unit
+            if check_rows is not None:
+                check_rows(p, fold_proba, None if sample_weight is None else w)
             return est.estimate(p, None if sample_weight is None else w,
                                 random_state=random_state, fold_proba=fold_proba, cells=cells)
         if cells is not None:

@@ -860,7 +860,8 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
     seeds = {lab: rng.randint(2**31 - 1) for lab in labels}
     source = getattr(owner, "_source_tally", None)
     # one broadcast: the model (with a refit base model's fold models), the estimator, seeds
-    shared = _broadcast(X, (owner.estimator_, est, source, seeds, owner._fold_scorer()))
+    shared = _broadcast(X, (owner.estimator_, est, source, seeds, owner._fold_scorer(),
+                            getattr(owner, "_labelled_repeats", None)))
     batch_type = X.schema[batch_col].dataType
     schema = T.StructType([
         T.StructField("batch", batch_type),
@@ -873,6 +874,10 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         T.StructField("shift_pvalue", T.DoubleType()),
         T.StructField("converged", T.BooleanType()),
         T.StructField("class_shift_score", T.ArrayType(T.DoubleType())),
+        T.StructField("ml_prior", T.ArrayType(T.DoubleType())),
+        T.StructField("pseudo_rows", T.DoubleType()),
+        # the batch's repeated rows beyond chance (repeats_of_rows; empty: none)
+        T.StructField("repeats", T.ArrayType(T.DoubleType())),
         T.StructField("weight_unit", T.DoubleType()),
         T.StructField("error", T.StringType()),
         # the batch's warnings (raised on the driver once per condition: warn_monitor_batches)
@@ -894,7 +899,8 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
                 "batch": [key], "n_rows": [len(pdf)], "n_effective": [np.nan], "prior": [[]],
                 "lower": [[]],
                 "upper": [[]], "shift_statistic": [np.nan], "shift_pvalue": [np.nan],
-                "converged": [False], "class_shift_score": [[]], "weight_unit": [1.0],
+                "converged": [False], "class_shift_score": [[]], "ml_prior": [[]],
+                "pseudo_rows": [np.nan], "repeats": [[]], "weight_unit": [1.0],
                 "error": [message], "warning_category": [[]], "warning_message": [[]],
             })
 
@@ -904,7 +910,7 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         from .._validation import check_sample_weight
         from ._dask import monitor_proba
 
-        model, prior_est, src, seed_of, folds = shared.value
+        model, prior_est, src, seed_of, folds, counts = shared.value
         Xb = _features(pdf, features, named)
         proba = np.asarray(model.predict_proba(Xb), dtype=float)
         w = check_sample_weight(
@@ -914,9 +920,9 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         order = np.lexsort((w, *proba.T[::-1]))  # by class-0 probability, ..., then weight
         # a refit base model: the batch's rows scored by every fold model too, in the same order
         fold_proba = None if folds is None else [f[order] for f in folds.fold_proba(Xb)]
-        row, unit, caught = monitor_proba(prior_est, src, seed_of[key], proba[order], w[order],
-                                          fold_proba)
-        n, n_eff, prior, lower, upper, stat, pvalue, conv, by_class = row
+        row, unit, caught, repeats = monitor_proba(prior_est, src, seed_of[key], proba[order],
+                                                   w[order], fold_proba, counts)
+        n, n_eff, prior, lower, upper, stat, pvalue, conv, by_class, ml, pseudo = row
         return pd.DataFrame({
             "batch": [key], "n_rows": [int(n)], "n_effective": [float(n_eff)],
             "prior": [list(map(float, prior))],
@@ -924,6 +930,8 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
             "shift_statistic": [float(stat) if stat is not None else np.nan],
             "shift_pvalue": [float(pvalue) if pvalue is not None else np.nan],
             "converged": [bool(conv)], "class_shift_score": [list(map(float, by_class))],
+            "ml_prior": [list(map(float, ml))], "pseudo_rows": [float(pseudo)],
+            "repeats": [[] if repeats is None else list(map(float, repeats))],
             "weight_unit": [float(unit)], "error": [None],
             "warning_category": [[f"{c.__module__}:{c.__qualname__}" for c, _ in caught]],
             "warning_message": [[m for _, m in caught]],
@@ -950,14 +958,16 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         ("shift_pvalue", float),
         ("converged", bool),
         ("class_shift_score", float, (k,)),
+        ("ml_prior", float, (k,)),
+        ("pseudo_rows", float),
     ]
     table = np.zeros(len(labels), dtype=dtype)
     for i, lab in enumerate(labels):
         r = by_label[lab]
         table[i] = (lab, r["n_rows"], r["n_effective"], r["prior"], r["lower"], r["upper"],
                     r["shift_statistic"], r["shift_pvalue"], r["converged"],
-                    r["class_shift_score"])
-    from ._dask import warn_monitor_batches, warn_monitor_units
+                    r["class_shift_score"], r["ml_prior"], r["pseudo_rows"])
+    from ._dask import warn_batch_repeats, warn_monitor_batches, warn_monitor_units
 
     warn_monitor_units([r["weight_unit"] for r in rows])
     warn_monitor_batches(
@@ -966,7 +976,18 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
             strict=True)]) for lab in labels],
         len(labels),
     )
+    warn_batch_repeats([(lab, _repeats(by_label[lab]["repeats"])) for lab in labels],
+                       len(labels))
     return table
+
+
+def _repeats(values: Any) -> tuple | None:
+    """A batch's ``repeats`` column back as :func:`probwrap.shift._repeats.repeats_of_rows`
+    gives it (None: empty)."""
+    if not values:
+        return None
+    n, groups, observed, expected = values
+    return int(n), int(groups), float(observed), float(expected)
 
 
 def _warning_category(name: str) -> type:

@@ -16,7 +16,41 @@ from ._estimate import PriorIntervalConflictWarning
 from ._estimator import PriorEstimator, _current_source_score, _kish, _source_cells
 from ._shift_tests import _mean_cov, _score_rows, _score_stat_moments
 
-__all__ = ["prior_by_batch", "class_shift_scores"]
+__all__ = ["HELD_MOVE", "prior_by_batch", "class_shift_scores", "held_near_source"]
+
+#: A pull toward the source prior that moves a batch's share by at least this much marks the
+#: batch as held near the source share for lack of evidence (our rule: the command line's
+#: ``held`` mark and the HTML report's batch tables read it).
+HELD_MOVE = 0.01
+
+
+def held_near_source(table: np.ndarray) -> np.ndarray:
+    """Which class shares of a :func:`prior_by_batch` (or ``monitor``) table were held near the
+    source share for lack of evidence, shape (batches, k): the pull of the batch's
+    ``pseudo_rows`` (more than 0) moved ``prior`` at least :data:`HELD_MOVE` from ``ml_prior``,
+    the rows alone. All False for a table without those fields.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift import PriorEstimator, prior_by_batch
+    >>> rng = np.random.default_rng(0)
+    >>> p1 = rng.uniform(0.05, 0.95, size=400)
+    >>> y = (rng.uniform(size=400) < p1).astype(int)
+    >>> proba = np.column_stack([1 - p1, p1])
+    >>> est = PriorEstimator(n_resamples=0).fit(proba[:300], y[:300])
+    >>> high = proba[300:][proba[300:, 1] > 0.6]       # a batch with many positives
+    >>> table = prior_by_batch(est, np.vstack([high[:10], proba[300:]]), batch_size=10)
+    >>> bool(held_near_source(table)[0, 1])            # 10 rows: held near the source share
+    True
+    """
+    names = table.dtype.names or ()
+    prior = np.asarray(table["prior"], dtype=float)
+    if "ml_prior" not in names or "pseudo_rows" not in names:
+        return np.zeros(prior.shape, dtype=bool)
+    pulled = np.asarray(table["pseudo_rows"], dtype=float) > 0
+    moved = np.abs(prior - np.asarray(table["ml_prior"], dtype=float)) >= HELD_MOVE
+    return moved & pulled[:, None]
 
 
 def class_shift_scores(estimator: PriorEstimator, proba: Any, sample_weight: Any = None,

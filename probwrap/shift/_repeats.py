@@ -19,8 +19,9 @@ with probability ``q = pi' C pi``, so the repeats expected of ``n`` independent 
 give a design effect of about ``1 + (n - 1) q`` (:func:`collision_bound` takes each ``C_cc'`` at
 its upper bound and ``adapt`` the larger ``q`` of the source shares and the rows' estimate).
 Where the rows' own design effect of their repeats, ``sum_g W_g^2 / sum_i w_i^2`` (``W_g`` the
-weight of a group of identical rows), is well above it, ``PriorShiftWrapper.adapt`` warns
-(:class:`RepeatedRowsWarning`; docs/prior_shift.md, "Confident misses on real sets");
+weight of a group of identical rows), is well above it, ``PriorShiftWrapper.adapt`` and
+``monitor`` warn (:class:`RepeatedRowsWarning`, one rule for every path:
+:func:`repeats_of_rows`; docs/prior_shift.md, "Confident misses on real sets");
 ``cells`` grouping the identical rows then count each group once.
 """
 
@@ -31,6 +32,9 @@ import numpy as np
 __all__ = [
     "REPEAT_EXCESS",
     "RepeatedRowsWarning",
+    "batch_repeats_message",
+    "repeats_of_rows",
+    "rows_repeat_message",
     "excess_repeats",
     "collision_bound",
     "identical_row_codes",
@@ -49,10 +53,15 @@ class RepeatedRowsWarning(UserWarning):
     independent draws of the labelled classes do, so the interval of their class shares and the
     shift test, which count every row as an independent draw, are too sure.
 
-    Raised by ``PriorShiftWrapper.adapt`` (rows in memory, no ``cells`` given) when the design
-    effect of the rows' exact repeats is more than ``REPEAT_EXCESS`` (1.25) times the largest one
-    that independent draws give, read from how often labelled rows coincide
-    (:mod:`probwrap.shift._repeats`). Rows resampled with replacement from a pool, or copied
+    Raised by ``PriorShiftWrapper.adapt`` (no ``cells`` given; rows in memory, or at most
+    20,000 Dask or Spark rows, whose rows come to the client) when the design effect of the
+    rows' exact repeats is more than ``REPEAT_EXCESS`` (1.25) times the largest one that
+    independent draws give, read from how often labelled rows coincide
+    (:mod:`probwrap.shift._repeats`), and by ``PriorShiftWrapper.monitor`` once per call,
+    naming the batches whose rows do so (each batch judged by the same rule, in memory, on a
+    Dask worker or a Spark executor; since 5 December 2026). Not judged: more than 20,000 Dask
+    or Spark rows at ``adapt`` (they come back as a tally of binned scores, which keeps no
+    identical rows; docs/scale.md), and labelled rows not kept as rows. Rows resampled with replacement from a pool, or copied
     records, carry the pool's own sampling error, which an interval counting every row as an
     independent draw leaves out: on R's AER PhDPublications and survival nwtco, batches of 400
     rows drawn with replacement from half of the rows held the truth in 90-93 % and 84-94 % of
@@ -153,3 +162,85 @@ def excess_repeats(codes: np.ndarray, sample_weight: np.ndarray | None,
     observed = float(np.dot(group, group) / sq)
     n = float(w.sum() ** 2 / sq)
     return observed, float(1.0 + max(n - 1.0, 0.0) * max(rate, 0.0))
+
+
+def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_proba=None,
+                    sample_weight: np.ndarray | None = None) -> tuple[int, int, float, float] | None:
+    """The check behind :class:`RepeatedRowsWarning` on one set of unlabelled rows: ``(rows,
+    distinct rows, observed design effect, the largest one independent draws give)`` where the
+    rows repeat one another beyond chance (:func:`repeats_beyond_chance`), None otherwise.
+
+    One function for every path that judges rows (``adapt`` in memory and on the rows of a
+    small Dask or Spark set, ``monitor`` per batch in memory, on a Dask worker or a Spark
+    executor), so that the same rows give the same answer. ``estimator``: the fitted
+    :class:`~probwrap.shift.PriorEstimator` (its calibration and source prior); ``counts``:
+    ``labelled_repeat_counts`` of its labelled rows (None: not kept as rows, nothing judged);
+    ``fold_proba``: the fold models' posteriors of the same rows (identical rows agree in all).
+    The shares of the mix are the source's and the rows' maximum-likelihood estimate (the rate
+    of coincidences differs by class; the larger of the two is taken).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift import PriorEstimator
+    >>> rng = np.random.default_rng(0)
+    >>> p1 = rng.uniform(0.05, 0.95, size=300)
+    >>> proba = np.column_stack([1 - p1, p1])
+    >>> y = (rng.uniform(size=300) < p1).astype(int)
+    >>> est = PriorEstimator(n_resamples=20, random_state=0).fit(proba, y)
+    >>> counts = labelled_repeat_counts(proba, y, 2)
+    >>> batch = proba[rng.integers(0, 100, size=200)]   # 200 draws from 100 rows
+    >>> repeats_of_rows(est, counts, batch)[2] > 2.0
+    True
+    >>> repeats_of_rows(est, counts, proba[100:300]) is None   # no row repeats
+    True
+    """
+    import warnings
+
+    from ._estimate import em_prior
+
+    p = np.asarray(proba, dtype=float)
+    if counts is None or getattr(estimator, "n_resamples", 0) == 0 or p.shape[0] < 2:
+        return None
+    codes = identical_row_codes(p, *(fold_proba or []))
+    groups = int(codes.max()) + 1
+    if groups == codes.shape[0]:
+        return None  # no row repeats
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        ml = em_prior(estimator.calibrate(p), estimator.source_prior_,
+                      sample_weight=sample_weight).prior
+    rate = max(collision_bound(*counts, estimator.source_prior_), collision_bound(*counts, ml))
+    observed, expected = excess_repeats(codes, sample_weight, rate)
+    if not repeats_beyond_chance(observed, expected, codes, sample_weight):
+        return None
+    return int(codes.shape[0]), groups, float(observed), float(expected)
+
+
+def rows_repeat_message(found: tuple[int, int, float, float]) -> str:
+    """The numbers of :func:`repeats_of_rows` in words (one set of rows)."""
+    n, groups, observed, expected = found
+    return (f"{n - groups} of the {n} unlabelled rows repeat another row exactly (the same "
+            f"posteriors; {groups} distinct rows), a design effect of {observed:.3g} where "
+            f"independent draws of these classes give at most {expected:.3g} (from how often "
+            "labelled rows coincide)")
+
+
+def batch_repeats_message(found: list, n_batches: int) -> str:
+    """``monitor``'s :class:`RepeatedRowsWarning` for the batches whose rows repeat beyond
+    chance, ``found`` = ``[(batch label, repeats_of_rows(...)), ...]`` in table order: the same
+    words whether the batches were judged in memory, on Dask workers or Spark executors."""
+    names = ", ".join(str(b) for b, _ in found[:8]) + (", ..." if len(found) > 8 else "")
+    first, numbers = found[0]
+    return (
+        f"monitor: in {len(found)} of {n_batches} batches (batch {names}) the rows repeat one "
+        f"another far beyond chance; first, batch {first}: {rows_repeat_message(numbers)}. "
+        "Each batch's shift test and interval count every row as an independent draw; rows "
+        "resampled with replacement from a pool, or copied records, are not, and those "
+        "intervals are then too narrow (they can miss the share with no other warning). "
+        "If the repeats are copies, monitor the distinct rows, or (rows in memory) pass "
+        "cells= giving each group of identical rows one label (for a NumPy array X: "
+        "numpy.unique(X, axis=0, return_inverse=True)[1]) so that each group counts once; "
+        "Dask and Spark batches take no cells, collect a batch's rows for that "
+        "(docs/prior_shift.md, 'Confident misses on real sets')."
+    )
