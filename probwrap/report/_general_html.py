@@ -6,6 +6,7 @@ from typing import Any
 
 import numpy as np
 
+from ._batch_marks import general_held, held_cell_mark, held_note
 from ._cells import prevalence_unit_words, reliability_diagram, unit_words, widened_words
 from ._common import draw_figure, figure_notes
 from ._general import MulticlassReportContent
@@ -328,12 +329,19 @@ def _batches(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         return ""
     level = f"{c.confidence_level:.0%}"
     head = "".join(f"<th>{_text(name)}</th>" for name in c.class_names)
+    # a share kept near the source share for lack of rows says so, with the rows alone
+    held, ml = general_held(table)
+
+    def mark(i: int, j: int) -> str:
+        return f" {_text(held_cell_mark(float(ml[i, j])))}" if held[i, j] else ""
+
     body = "".join(
-        f'<tr data-item="batch:{_text(str(table["batch"][i]))}"><td>'
+        f'<tr data-item="batch:{_text(str(table["batch"][i]))}" '
+        f'data-held="{int(held[i].any())}"><td>'
         f'{_text(str(table["batch"][i]))}</td><td>{int(table["n_rows"][i])}</td>'
         + "".join(
             f'<td data-value="{float(table["prior"][i, j])!r}">{table["prior"][i, j]:.4f} '
-            f'[{table["lower"][i, j]:.4f}, {table["upper"][i, j]:.4f}]</td>'
+            f'[{table["lower"][i, j]:.4f}, {table["upper"][i, j]:.4f}]{mark(i, j)}</td>'
             for j in range(c.n_classes))
         + f'<td data-value="{float(table["shift_pvalue"][i])!r}">'
         f'{table["shift_pvalue"][i]:.3g}</td></tr>'
@@ -344,6 +352,7 @@ def _batches(c: MulticlassReportContent, figures: dict[str, str]) -> str:
         "test of no shift against the source shares.</p>",
         f'<table id="class-batches"><thead><tr><th>batch</th><th>rows</th>{head}'
         f"<th>shift test p-value</th></tr></thead><tbody>{body}</tbody></table>",
+        held_note(table, held.any(axis=1), "the source shares", "class-batches-held"),
     ]
     if c.class_alarms:
         rows = []

@@ -14,6 +14,7 @@ from ..plot import (
     PrevalenceDriftDisplay,
 )
 from ._alarm_chart import alarm_svg
+from ._batch_marks import binary_batch_table
 from ._cells import prevalence_unit_words, reliability_diagram, unit_words, widened_words
 from ._common import draw_figure, figure_notes
 from ._content import BAYES_NAME, HALF_NAME, ReportContent
@@ -341,6 +342,11 @@ def _prevalence_section(c: ReportContent, figures: dict[str, str]) -> str:
                 "against the source prevalence; circled batches fail the shift test.",
                 figure_notes(c, "prevalence"),
             ))
+        if c.batch_table is not None and c.source_prevalence is not None:
+            # the batches in numbers, a batch kept near the source prevalence for lack of rows
+            # marked as the command line marks it (since 5 December 2026)
+            parts.append(binary_batch_table(c.batch_table, c.source_prevalence,
+                                            f"{c.confidence_level:.0%}"))
         if getattr(c, "alarm", None) is not None:
             parts.append(_alarm_text(c))
             if "alarm" in figures:
