@@ -568,6 +568,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.predicted_with_ = "refit"
         self.refit_spread_ratios_, self.fold_spread_variation_ = np.empty(0), np.nan
         self._labelled_repeats = None  # (adapt's RepeatedRowsWarning)
+        self._labelled_clumps = None
         self._fold_share = None
         if _multiclass_dask(self.estimator, X, y, sample_weight):
             # Multiclass Dask rows: no tally (a posterior vector has no single score); the
@@ -639,6 +640,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self._labelled_repeats = self._repeat_counts(X, est, ho.n_folds)
         return self
 
+    def _repeat_reference(self) -> tuple | None:
+        """What every repeat check reads of the labelled rows (``adapt``, ``monitor`` in
+        memory, on Dask and on Spark): their tie counts and how their identical rows clump
+        (:func:`probwrap.shift._repeats.repeats_of_rows`); None where not kept."""
+        counts = getattr(self, "_labelled_repeats", None)
+        if counts is None:
+            return None
+        return (*counts, *(getattr(self, "_labelled_clumps", None) or ()))
+
     def _repeat_counts(self, X: Any, est: PriorEstimator, n_folds: int) -> tuple | None:
         """How often pairs of labelled rows (by their classes) have identical posteriors from
         the model that scores the ``adapt`` rows
@@ -648,19 +658,22 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         as many pairs: on R's infert, 165 labelled rows, the rate within five folds, 0.0024,
         was a low draw of the 0.0043 over all pairs). None where the labelled rows are not
         kept as rows (``adapt`` then does not judge its rows' repeats)."""
-        from .shift._repeats import labelled_repeat_counts
+        from .shift._repeats import labelled_clumps, labelled_repeat_counts
 
         src = est._source_rows()
         k = self.classes_.shape[0]
         if src is None or est._source_row_counts() is not None or est.n_resamples == 0:
             return None
         if n_folds == 0:
-            return labelled_repeat_counts(src[0], src[1], k)
-        if not self._refit_here or _is_dask(X):
-            return None
-        proba = self._inner_output(X, "predict_proba")
-        if proba.shape[0] != src[0].shape[0]:
-            return None
+            proba = src[0]
+        else:
+            if not self._refit_here or _is_dask(X):
+                return None
+            proba = self._inner_output(X, "predict_proba")
+            if proba.shape[0] != src[0].shape[0]:
+                return None
+        # (and how the identical rows clump: the chance spread of the count of ties)
+        self._labelled_clumps = labelled_clumps(proba, src[1], k)
         return labelled_repeat_counts(proba, src[1], k)
 
     def _choose_predicting_models(self, X: Any, est: PriorEstimator) -> None:
@@ -1044,8 +1057,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         repeats as such, which the user decides."""
         from .shift._repeats import RepeatedRowsWarning, repeats_of_rows, rows_repeat_message
 
-        found = repeats_of_rows(self.prior_estimator_, getattr(self, "_labelled_repeats", None),
-                                proba, folds, sample_weight)
+        found = repeats_of_rows(self.prior_estimator_, self._repeat_reference(), proba, folds,
+                                sample_weight)
         if found is None:
             return
         warnings.warn(
@@ -1409,7 +1422,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         the rule ``adapt`` applies to its rows (:func:`probwrap.shift._repeats.repeats_of_rows`;
         Dask workers and Spark executors apply it to their batches alike). Nothing where the
         labelled rows were not kept as rows."""
-        counts = getattr(self, "_labelled_repeats", None)
+        counts = self._repeat_reference()
         if counts is None or table.shape[0] == 0:
             return
         from .scale._entry import warn_batch_repeats

@@ -220,12 +220,15 @@ def warn_repeated_scores(est: Any, proba: np.ndarray, ref_proba: np.ndarray, ref
     batch is shown once with how many more batches had it (``_by_batch``)."""
     from probwrap.shift._repeats import (
         RepeatedRowsWarning,
+        labelled_clumps,
         labelled_repeat_counts,
         repeats_of_rows,
         rows_repeat_message,
     )
 
-    counts = labelled_repeat_counts(two_columns(ref_proba), np.asarray(ref_y).astype(int), 2)
+    ref = two_columns(ref_proba)
+    y = np.asarray(ref_y).astype(int)
+    counts = (*labelled_repeat_counts(ref, y, 2), *labelled_clumps(ref, y, 2))
     found = repeats_of_rows(est, counts, two_columns(proba), None, sample_weight)
     if found is None:
         return

@@ -472,7 +472,7 @@ def monitor_proba(est, source, seed, proba, w, fold_proba=None, counts=None):
     ``fold_proba``: the batch's posteriors from each fold model of a base model refit on the
     labelled rows (read as in memory, ``prior_by_batch(fold_proba=...)``).
 
-    ``counts``: the labelled rows' repeat counts (``PriorShiftWrapper._labelled_repeats``;
+    ``counts``: the labelled rows' repeat counts (``PriorShiftWrapper._repeat_reference()``;
     None: not kept as rows): the fourth entry returned is then the batch's
     :func:`probwrap.shift._repeats.repeats_of_rows` (None where its rows do not repeat beyond
     chance), judged on the batch's rows as ``monitor`` judges a batch in memory; the client
@@ -584,7 +584,7 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
     # with every block's task (a refit base model brings its fold models along)
     shared = dask.delayed(
         (owner.estimator_, est, source, owner._fold_scorer(),
-         getattr(owner, "_labelled_repeats", None)),
+         owner._repeat_reference()),
         pure=True, traverse=False,
     )
     call = dask.delayed(_monitor_block, pure=True)

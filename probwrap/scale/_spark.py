@@ -861,7 +861,7 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
     source = getattr(owner, "_source_tally", None)
     # one broadcast: the model (with a refit base model's fold models), the estimator, seeds
     shared = _broadcast(X, (owner.estimator_, est, source, seeds, owner._fold_scorer(),
-                            getattr(owner, "_labelled_repeats", None)))
+                            owner._repeat_reference()))
     batch_type = X.schema[batch_col].dataType
     schema = T.StructType([
         T.StructField("batch", batch_type),

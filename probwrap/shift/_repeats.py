@@ -22,7 +22,10 @@ Where the rows' own design effect of their repeats, ``sum_g W_g^2 / sum_i w_i^2`
 weight of a group of identical rows), is well above it, ``PriorShiftWrapper.adapt`` and
 ``monitor`` warn (:class:`RepeatedRowsWarning`, one rule for every path:
 :func:`repeats_of_rows`; docs/prior_shift.md, "Confident misses on real sets");
-``cells`` grouping the identical rows then count each group once.
+``cells`` grouping the identical rows then count each group once. "Well above" allows for the
+chance spread of the count of tied pairs, which is large where a few values hold many rows
+(rounded or clipped scores): :func:`repeats_beyond_chance`, with how the labelled rows' identical
+posteriors clump (:func:`labelled_clumps`; since 5 December 2026).
 """
 
 from __future__ import annotations
@@ -38,6 +41,7 @@ __all__ = [
     "excess_repeats",
     "collision_bound",
     "identical_row_codes",
+    "labelled_clumps",
     "labelled_repeat_counts",
     "repeats_beyond_chance",
 ]
@@ -112,6 +116,36 @@ def labelled_repeat_counts(proba: np.ndarray, y_index: np.ndarray,
     return tied, pairs
 
 
+def labelled_clumps(proba: np.ndarray, y_index: np.ndarray,
+                    n_classes: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """How the labelled rows' identical posteriors clump, by class: ``(Q, S)`` with ``Q[c, c']
+    = sum_g p_cg p_c'g`` and ``S[c, c', c''] = sum_g p_cg p_c'g p_c''g``, ``p_cg`` the share of
+    class ``c``'s rows in group ``g`` of identical posteriors (plug-in; one model's posteriors).
+    At class shares ``pi`` a draw of the mix falls in group ``g`` with ``f_g = sum_c pi_c
+    p_cg``, so ``pi' Q pi = sum_g f_g^2`` and ``S[pi, pi, pi] = sum_g f_g^3``: the two sums the
+    variance of the count of tied pairs among independent draws needs
+    (:func:`repeats_beyond_chance`)."""
+    p = np.asarray(proba, dtype=float)
+    y = np.asarray(y_index).astype(int)
+    k = int(n_classes) if n_classes is not None else int(y.max(initial=0)) + 1
+    codes = identical_row_codes(p)
+    g = int(codes.max(initial=-1)) + 1
+    table = np.zeros((g, k))
+    np.add.at(table, (codes, y), 1.0)
+    share = table / np.maximum(table.sum(axis=0), 1.0)
+    cube = np.empty((k, k, k))
+    for c in range(k):
+        cube[c] = (share[:, c:c + 1] * share).T @ share
+    return share.T @ share, cube
+
+
+def _clump_sums(clumps: tuple, shares: np.ndarray) -> tuple[float, float]:
+    """``(sum_g f_g^2, sum_g f_g^3)`` of the mix with ``shares`` (:func:`labelled_clumps`)."""
+    q, cube = clumps
+    sh = np.asarray(shares, dtype=float)
+    return float(sh @ q @ sh), float(np.einsum("ijk,i,j,k->", cube, sh, sh, sh))
+
+
 def collision_bound(tied: np.ndarray, pairs: np.ndarray, shares: np.ndarray) -> float:
     """How often two independent rows of a mix of the classes with ``shares`` coincide, at most:
     ``shares' C shares`` with each entry of the class-pair rate ``C`` at its upper bound
@@ -126,19 +160,36 @@ def collision_bound(tied: np.ndarray, pairs: np.ndarray, shares: np.ndarray) -> 
 
 
 def repeats_beyond_chance(observed: float, expected: float, codes: np.ndarray,
-                          sample_weight: np.ndarray | None) -> bool:
+                          sample_weight: np.ndarray | None,
+                          clump: tuple[float, float] | None = None) -> bool:
     """Whether the rows' design effect of their repeats, ``observed``, is beyond what
     independent draws give (``expected``, see :func:`excess_repeats`): more than
     ``REPEAT_EXCESS`` times it, and the tied pairs beyond the expected count more than three
-    Poisson standard deviations of it plus 3 (common practice for a count; the labelled rate is
-    itself an estimate, and a few rows repeat by chance in a small batch)."""
+    standard deviations of it plus 3 (common practice for a count; the labelled rate is itself
+    an estimate, and a few rows repeat by chance in a small batch).
+
+    The standard deviation is that of the count of tied pairs among ``n`` independent draws,
+    a U-statistic: ``Var T = C(n, 2) (q - q^2) + n (n - 1) (n - 2) (s - q^2)`` with ``q =
+    sum_g f_g^2`` the rate at which two draws coincide and ``s = sum_g f_g^3`` (pairs sharing a
+    row covary; Hoeffding 1948, the variance of a U-statistic of degree 2, from memory), the
+    first term with ``q`` from ``expected`` and at least the Poisson count's, the second from
+    ``clump`` = ``(q, s)`` read off the labelled rows (:func:`labelled_clumps`; None: left
+    out, the rule before 5 December 2026). Where a few values hold many rows (scores rounded,
+    or clipped at 0 and 1) the second term dominates: the count of ties then swings with how
+    many rows fall on those values, which the Poisson count alone took for repeats beyond
+    chance (``probwrap prevalence`` on breast-cancer scores rounded to 2 or 3 decimals flagged
+    9 and 14 of 250 batches drawn without replacement; none with it)."""
     if observed <= REPEAT_EXCESS * expected:
         return False
     w = np.ones(np.asarray(codes).shape[0]) if sample_weight is None else np.asarray(
         sample_weight, dtype=float)
     n = float(w.sum() ** 2 / np.dot(w, w))
     tied, chance = (observed - 1.0) * n / 2.0, (expected - 1.0) * n / 2.0
-    return bool(tied > chance + 3.0 * np.sqrt(chance) + 3.0)
+    var = chance
+    if clump is not None:
+        q, s3 = clump
+        var += n * max(n - 1.0, 0.0) * max(n - 2.0, 0.0) * max(s3 - q * q, 0.0)
+    return bool(tied > chance + 3.0 * np.sqrt(var) + 3.0)
 
 
 def excess_repeats(codes: np.ndarray, sample_weight: np.ndarray | None,
@@ -174,7 +225,9 @@ def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_pro
     small Dask or Spark set, ``monitor`` per batch in memory, on a Dask worker or a Spark
     executor), so that the same rows give the same answer. ``estimator``: the fitted
     :class:`~probwrap.shift.PriorEstimator` (its calibration and source prior); ``counts``:
-    ``labelled_repeat_counts`` of its labelled rows (None: not kept as rows, nothing judged);
+    ``labelled_repeat_counts`` of its labelled rows, followed by their :func:`labelled_clumps`
+    (``(tied, pairs, Q, S)``; the first two alone: without the clumps' variance) or None (not
+    kept as rows, nothing judged);
     ``fold_proba``: the fold models' posteriors of the same rows (identical rows agree in all).
     The shares of the mix are the source's and the rows' maximum-likelihood estimate (the rate
     of coincidences differs by class; the larger of the two is taken).
@@ -188,7 +241,7 @@ def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_pro
     >>> proba = np.column_stack([1 - p1, p1])
     >>> y = (rng.uniform(size=300) < p1).astype(int)
     >>> est = PriorEstimator(n_resamples=20, random_state=0).fit(proba, y)
-    >>> counts = labelled_repeat_counts(proba, y, 2)
+    >>> counts = (*labelled_repeat_counts(proba, y, 2), *labelled_clumps(proba, y, 2))
     >>> batch = proba[rng.integers(0, 100, size=200)]   # 200 draws from 100 rows
     >>> repeats_of_rows(est, counts, batch)[2] > 2.0
     True
@@ -210,9 +263,16 @@ def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_pro
         warnings.simplefilter("ignore")
         ml = em_prior(estimator.calibrate(p), estimator.source_prior_,
                       sample_weight=sample_weight).prior
-    rate = max(collision_bound(*counts, estimator.source_prior_), collision_bound(*counts, ml))
+    tied, pairs = counts[0], counts[1]
+    rate = max(collision_bound(tied, pairs, estimator.source_prior_),
+               collision_bound(tied, pairs, ml))
     observed, expected = excess_repeats(codes, sample_weight, rate)
-    if not repeats_beyond_chance(observed, expected, codes, sample_weight):
+    clump = None
+    if len(counts) >= 4:
+        # the larger spread of the two mixes (how far the count of ties swings by chance)
+        sums = [_clump_sums(counts[2:4], sh) for sh in (estimator.source_prior_, ml)]
+        clump = max(sums, key=lambda qs: qs[1] - qs[0] ** 2)
+    if not repeats_beyond_chance(observed, expected, codes, sample_weight, clump):
         return None
     return int(codes.shape[0]), groups, float(observed), float(expected)
 
