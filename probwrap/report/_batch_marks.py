@@ -38,12 +38,13 @@ def held_note(table: np.ndarray, held: np.ndarray, source_words: str, elem_id: s
     return (
         f'<p id="{elem_id}" data-held-batches="{int(held.sum())}">'
         f"&ldquo;Kept near source&rdquo;: in {int(held.sum())} of {table.shape[0]} batches "
-        f"({span} rows) there are too few rows to carry the estimate far from "
-        f"{_text(source_words)}, so it is drawn toward it by up to {pull:g} pseudo-rows (fewer "
-        "where a shift shows). Such an estimate says only that the batch gives no firm "
-        "evidence, not that its share is near the source one. &ldquo;Rows alone&rdquo; is the "
-        "batch's own maximum-likelihood estimate without that pull; the interval is the one of "
-        "the rows alone and holds both. Larger batches are drawn less.</p>"
+        f"({span} rows) the estimate is drawn toward {_text(source_words)} by up to {pull:g} "
+        "pseudo-rows (fewer where a shift shows), which moved it by 0.01 or more, so that a "
+        "batch of few rows does not move far on noise. The pull is no finding that the "
+        "batch's share is near the source one: &ldquo;rows alone&rdquo; is the batch's own "
+        "maximum-likelihood estimate without it, the interval is the one of the rows alone "
+        "and holds both, and the shift test says whether the share moved. Larger batches are "
+        "drawn less.</p>"
     )
 
 
