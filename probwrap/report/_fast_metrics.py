@@ -92,11 +92,22 @@ def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins:
         cols += [bw * r, bw * r * x, bw * v, bw * v * x, bw * v * x * x, bw * (yf - mu0),
                  bw * mu0 * (1.0 - mu0)]
     V = np.column_stack(cols)
+    # the resamples on which bootstrap_interval's full refits fail, so that they are left out
+    # and counted as there: the slope and the intercept need both classes with positive weight
+    # (slope_intercept_fit raises otherwise), the slope also classes that overlap in the
+    # log-odds (its notes; that check also covers forecasts that are all the same). The
+    # one-step values of such a resample are finite but stand for a fit that does not exist.
+    if fit is not None:
+        on_pos = np.flatnonzero(yf == 1.0)
+        on_neg = np.flatnonzero(yf != 1.0)
+        x_pos, x_neg = x[on_pos], x[on_neg]
+        w_pos, w_neg = bw[on_pos], bw[on_neg]
     # the library's equal-width edges j / n_bins with bins closed on the left
     idx = np.searchsorted(np.arange(1, n_bins, dtype=float) / n_bins, p, side="right")
     py, pp = bw * yf, bw * p
     rng = check_random_state(seed)
     dist = np.empty((n_resamples, 5))
+    n_vanished = n_separated = 0  # resamples with one class only; with classes not overlapping
     n_units = n if groups is None else int(groups.max()) + 1
     for k in range(n_resamples):
         c = np.bincount(rng.randint(0, n_units, size=n_units), minlength=n_units).astype(float)
@@ -108,6 +119,17 @@ def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins:
                      - np.bincount(idx, weights=c * pp, minlength=n_bins))
         row = [s[0] / total, s[1] / total, gap.sum() / total, np.nan, np.nan]
         if fit is not None:
+            drawn_pos, drawn_neg = c[on_pos] * w_pos > 0, c[on_neg] * w_neg > 0
+            if not (drawn_pos.any() and drawn_neg.any()):  # a class vanished: neither number
+                n_vanished += 1
+                dist[k] = row
+                continue
+            xp, xn = x_pos[drawn_pos], x_neg[drawn_neg]
+            if not no_slope and (xp.min() >= xn.max() or xn.min() >= xp.max()):
+                row[4] = fit.intercept + s[8] / s[9]  # separated: the intercept only
+                n_separated += 1
+                dist[k] = row
+                continue
             g = np.array([s[3], s[4]])
             H = np.array([[s[5], s[6]], [s[6], s[7]]])
             try:
@@ -132,12 +154,11 @@ def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins:
         d = dist[:, j][finite]
         dropped = int(n_resamples - d.shape[0])
         if dropped:
-            warnings.warn(f"report, {labels[key]}: {dropped} of {n_resamples} resamples were "
-                          "left out because the number could not be computed on them.",
-                          UserWarning, stacklevel=3)
-            notes.add(f"metric:{key}", labels[key], "UserWarning",
-                      f"{dropped} of {n_resamples} resamples were left out because the number "
-                      "could not be computed on them.")
+            why = _why_dropped(dropped, n_vanished, n_separated if key == "slope" else 0)
+            message = (f"{dropped} of {n_resamples} resamples were left out because the number "
+                       f"could not be computed on them{why}.")
+            warnings.warn(f"report, {labels[key]}: {message}", UserWarning, stacklevel=3)
+            notes.add(f"metric:{key}", labels[key], "UserWarning", message)
         why = withheld_interval(notes, key, labels[key], dropped, n_resamples)
         lo, hi = ((np.nan, np.nan) if why is not None
                   else np.quantile(d, [alpha / 2.0, 1.0 - alpha / 2.0]))
@@ -153,3 +174,18 @@ def fast_metric_rows(y: np.ndarray, p: np.ndarray, w: np.ndarray | None, n_bins:
             out.append(MetricRow(key, labels[key], float(value), float(lo), float(hi), ideal,
                                  interval_method=method, **extra))
     return out
+
+
+def _why_dropped(dropped: int, n_vanished: int, n_separated: int) -> str:
+    """Why ``dropped`` resamples of one metric were left out, in words (empty if unknown)."""
+    parts = []
+    if n_vanished:
+        parts.append(f"{n_vanished} held one class only (`y_true` must contain both classes, "
+                     "with positive weight, for a calibration slope and intercept)")
+    if n_separated:
+        parts.append(f"in {n_separated} the classes did not overlap in the log-odds, so the "
+                     "slope is unbounded")
+    other = dropped - n_vanished - n_separated
+    if parts and other > 0:
+        parts.append(f"{other} gave a value that is not finite")
+    return f": {'; '.join(parts)}" if parts else ""
