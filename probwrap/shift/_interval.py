@@ -177,6 +177,7 @@ def score_interval(
     cells: Any = None,
     source_cells: Any = None,
     target_moments: Any = None,
+    null_variance_below: float = 100.0,
 ) -> tuple[np.ndarray, bool]:
     r"""Two-sample score interval for the positive-class prior of unlabelled rows (two classes).
 
@@ -223,6 +224,22 @@ def score_interval(
     Definition 3.2, DML2), whose error is the two samples' sampling error to first order for
     any model, because the condition holds for every fixed model.
 
+    On few unlabelled rows (fewer than ``null_variance_below`` effective rows, without
+    ``cells``, ``fold_proba`` or ``target_moments``) the unlabelled side's variance
+    :math:`s^2_t(\pi) / (n_t - 1)` is replaced by its value *under the tested prior*,
+    :math:`\bigl(\sum_c \pi_c\, \overline{u^2}_c(\pi) - \bar f_s(\pi)^2\bigr) / n_t`, the
+    labelled rows of each class re-weighted to :math:`\pi` (Student's t keeps the
+    :math:`n_t - 1` degrees of freedom of that component). This is the choice that makes
+    Wilson's (1927) interval of a proportion a score interval rather than a Wald one: with
+    posteriors that reveal the class it is Wilson's interval exactly (tested against
+    statsmodels). On 20 rows the rows' own variance at a far prior is dominated by the rows that
+    argue against it (a low-scoring row's score at a prior near 1 is large), so the test could
+    not reject any prior and the interval of a rare class reached 1 in most batches, while it
+    under-covered where a skewed score's variance came out small (see
+    ``benchmarks/small_batch_interval.py`` and docs/prior_shift.md, "Small batches").
+    From ``null_variance_below`` rows on the two variances agree at the true prior and the
+    rows' own one, which holds whatever the prior-shift model, is kept.
+
     With ``cells`` / ``source_cells`` (aggregated counts: the rows of one group share a cell)
     a side's variance is the cluster-robust (sandwich) variance of its mean with the cells as
     clusters, known to ``cells - 1`` degrees of freedom (:mod:`probwrap.shift._cells`; Liang &
@@ -268,6 +285,10 @@ def score_interval(
         Dask or Spark rows): the weighted mean and second moment of their fold-averaged score
         on a grid of priors, summed where the rows live and interpolated between
         (:mod:`probwrap.shift._fold_moments`); ``proba`` then only locates the rows' range.
+    null_variance_below : float, default=100
+        Below this many effective unlabelled rows their variance is taken under the tested
+        prior (above); 0 always uses the rows' own variance (the interval before 5 December
+        2026).
 
     Returns
     -------
@@ -346,6 +367,13 @@ def score_interval(
         rows_of = [np.flatnonzero(y_s == c) for c in (0, 1)]
 
     level = float(confidence_level)
+    if (isinstance(null_variance_below, bool) or not isinstance(null_variance_below, (int, float))
+            or not null_variance_below >= 0):
+        raise ValueError("`null_variance_below` must be a number >= 0 (effective unlabelled "
+                         f"rows); got {plain(null_variance_below)!r}.")
+    # the unlabelled side's variance under the tested prior (module docstring of the function)
+    under_null = (folds is None and target_moments is None and cell_t is None
+                  and n_t < float(null_variance_below))
 
     def stat(t: np.ndarray) -> np.ndarray:
         """The statistic at each candidate prior, on the chi-square scale: ``T`` referred to
@@ -376,14 +404,17 @@ def score_interval(
                     s_t = cell_sums((u_t - m_t) * wt[:, None], cell_t)
                     comp = g_t / max(g_t - 1.0, 1.0) * np.sum(s_t * s_t, axis=0)
             m_s = np.zeros(tc.shape[0])
-            var = comp
-            spread = comp**2 / max(n_t - 1.0, 1.0)
+            second_s = np.zeros(tc.shape[0])  # the labelled rows' E[u^2] at the shares tc
+            target_comp = comp
+            var = np.zeros(tc.shape[0])
+            spread = np.zeros(tc.shape[0])
             h_s = None if cell_s is None else np.zeros((p_s.shape[0], tc.shape[0]))
             for c, (a_c, d_c, w_c, n_c) in enumerate(strata):
                 share = tc if c == 1 else 1.0 - tc
                 u_c = d_c[:, None] / np.maximum(a_c[:, None] + tc * d_c[:, None], tiny)
                 m_c = w_c @ u_c
                 m_s = m_s + share * m_c
+                second_s = second_s + share * (w_c @ (u_c * u_c))
                 if h_s is not None:  # this class's rows' influence, summed by cell below
                     h_s[rows_of[c]] = share * (u_c - m_c) * w_c[:, None]
                     continue
@@ -396,6 +427,10 @@ def score_interval(
                 comp = g_s / max(g_s - 1.0, 1.0) * np.sum(s_s * s_s, axis=0)
                 var = var + comp
                 spread = spread + comp**2 / max(g_s - 1.0, 1.0)
+            if under_null:  # few unlabelled rows: their score's variance at the tested prior
+                target_comp = np.maximum(second_s - m_s**2, 0.0) / max(n_t, 1.0)
+            var = var + target_comp
+            spread = spread + target_comp**2 / max(n_t - 1.0, 1.0)
             raw = (m_t - m_s) ** 2 / np.maximum(var, 1e-300)
             if small_sample:
                 nu = np.where(spread > 0, var**2 / np.maximum(spread, 1e-300), np.inf)
