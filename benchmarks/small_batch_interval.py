@@ -113,19 +113,23 @@ def run(name: str, n_splits: int, n_batches: int, seed: int = 0, rows: int = 20)
                 for c in (0, 1):
                     sel = lab == c
                     batch[sel] = by_class[c][rng.integers(0, by_class[c].shape[0], sel.sum())]
-                with warnings.catch_warnings():
-                    warnings.simplefilter("ignore")
-                    got = {"now": tuple(est.estimate(batch).interval[1])}
-                    estimator_module.score_interval = functools.partial(
-                        score_interval, null_variance_below=0.0)
+                got, conflict = {}, {"likelihood": False}
+                for v, below in (("now", None), ("before", 0.0)):
+                    if below is not None:
+                        estimator_module.score_interval = functools.partial(
+                            score_interval, null_variance_below=below)
                     try:
-                        got["before"] = tuple(est.estimate(batch).interval[1])
+                        with warnings.catch_warnings(record=True) as caught:
+                            warnings.simplefilter("always")
+                            got[v] = tuple(est.estimate(batch).interval[1])
                     finally:
                         estimator_module.score_interval = score_interval
-                    cal = est.calibrate(batch)
-                    got["likelihood"] = likelihood_interval(cal, src)
+                    conflict[v] = any("No class prior is consistent" in str(w.message)
+                                      for w in caught)
+                got["likelihood"] = likelihood_interval(est.calibrate(batch), src)
                 for v, (lo, hi) in got.items():
-                    out[target][v].append((lo <= prev <= hi, hi - lo, hi >= 0.999))
+                    out[target][v].append((lo <= prev <= hi, hi - lo, hi >= 0.999,
+                                           conflict[v]))
     return out
 
 
@@ -141,14 +145,16 @@ def main() -> None:
         print(f"\n{name} (source share {np.mean(res['shares']):.3f}, pool AUC "
               f"{np.mean(res['auc']):.3f}, means over splits); "
               f"{args.splits * args.batches} batches of {args.rows} rows per cell; "
-              "coverage / mean width / share reaching 1")
-        print(f"{'prevalence':>10} " + " ".join(f"{v:>24}" for v in VARIANTS))
+              "coverage / mean width / share reaching 1 / share with no prevalence "
+              "consistent (a warning)")
+        print(f"{'prevalence':>10} " + " ".join(f"{v:>32}" for v in VARIANTS))
         for target in TARGETS:
             cells = []
             for v in VARIANTS:
                 a = np.array(res[target][v], dtype=float)
-                cells.append(f"{a[:, 0].mean():.3f} / {a[:, 1].mean():.3f} / {a[:, 2].mean():.2f}")
-            print(f"{target:>10} " + " ".join(f"{c:>24}" for c in cells))
+                cells.append(f"{a[:, 0].mean():.3f} / {a[:, 1].mean():.3f} / "
+                             f"{a[:, 2].mean():.2f} / {a[:, 3].mean():.3f}")
+            print(f"{target:>10} " + " ".join(f"{c:>32}" for c in cells))
 
 
 if __name__ == "__main__":
