@@ -101,3 +101,33 @@ def test_rare_class_twenty_low_rows_no_longer_reach_one():
     assert hi_b > 0.999  # before: reaches 1
     assert hi_now < 0.5  # now: prevalences above one half are ruled out
 
+
+
+def test_rare_class_batches_no_false_conflict():
+    # twenty 20-row batches drawn at 0.02 under an exact prior shift (same score model as
+    # above): with the rows' own variance, batches whose rows all score low have almost no
+    # spread, so every prior was rejected ("no class prior is consistent", a false warning)
+    # or only priors near 1 were kept; under the tested prior none conflicts and the
+    # intervals hold 0.02
+    rng = np.random.default_rng(5)
+
+    def draw(n, prior):
+        y = (rng.uniform(size=n) < prior).astype(int)
+        z = rng.normal(size=n) + 2.0 * y - 2.5
+        p1 = 1.0 / (1.0 + np.exp(-z))
+        return np.column_stack([1 - p1, p1]), y
+
+    p_s, y_s = draw(1500, 0.08)
+    est = PriorEstimator(random_state=0).fit(p_s, y_s)
+    src, ref = est.source_prior_, est.calibrate(p_s)
+    old_conflicts = new_conflicts = old_cover = new_cover = 0
+    for _ in range(20):
+        cal = est.calibrate(draw(20, 0.02)[0])
+        (lo, hi), ok = score_interval(cal, ref, y_s, src, null_variance_below=0)
+        old_conflicts += not ok
+        old_cover += lo <= 0.02 <= hi
+        (lo, hi), ok = score_interval(cal, ref, y_s, src)
+        new_conflicts += not ok
+        new_cover += lo <= 0.02 <= hi
+    assert old_conflicts >= 2 and old_cover <= 16  # before
+    assert new_conflicts == 0 and new_cover >= 19
