@@ -172,9 +172,12 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         probability of 0 above it: every row flagged), or that plug-in cutoff itself.
     cutoff_anchor_map_ : str or None
         The map behind ``cutoff_anchor_`` (``"identity"``: the model's own probabilities, so the
-        plain plug-in cutoff); None when none was used (more than 20,000 held-out rows,
-        tallied Dask input, a class with too few held-out rows to choose a map by
-        cross-validation, or a map that is not non-decreasing).
+        plain plug-in cutoff); with ``"class_shares"`` (the held-out scores ranked nothing
+        out of fold), or a decreasing map that puts every probability on one side of the
+        plug-in value, the anchor is that one decision: 1 to flag no row, below 0 to flag every
+        row. None when none was used (more than 20,000 held-out rows, tallied Dask input, a
+        class with too few held-out rows to choose a map by cross-validation, or a decreasing
+        map that crosses the plug-in value).
     action_budget_ : ActionBudget or None
         Fitted capacity limit for the non-cutoff cases.
     heldout_cost_ : float or None

