@@ -65,6 +65,9 @@ _RULES: list[tuple[re.Pattern[str], str]] = [(re.compile(a), b) for a, b in [
     # folds and maps
     (r"CalibrationWrapper\(method='auto'\): `cv`=(\d+) asks for more folds",
      r"--method auto: --folds \1 asks for more folds"),
+    (r"CalibrationWrapper\(method='auto', chose '(\w+)'\)", r"--method auto (chose \1)"),
+    (r"CalibrationWrapper\(method='(\w+)'\): class\(es\) with fewer",
+     r"--method \1: class(es) with fewer"),
     (r"`scores` separate the two classes perfectly", "the scores separate the two classes "
      "perfectly"),
     (r"Use smooth_targets=True for a finite fit\.",
