@@ -95,3 +95,25 @@ def test_decreasing_map_that_crosses_the_plugin_value_is_still_no_anchor():
     y = (rng.random(150) < 1.0 - p).astype(int)
     anchor, how = recalibrated_plugin_cutoff(p, y, np.ones(150), 0.2, 0)
     assert (anchor, how) == (0.2, None)
+
+
+def test_cross_fitted_rows_keep_the_old_anchor_for_the_class_shares_only():
+    # With 10 or more held-out rows of each class from fold models (crossfit=True) the class
+    # shares' verdict stays no anchor (the refitted model may rank; hunt23's headInjury), while
+    # a decreasing Platt map above the plug-in value everywhere still flags every row, as a
+    # cross-fitted model's own Platt map would be held at slope 0 (a constant share of 0.38,
+    # above 0.2, as scikit-learn's DummyClassifier(strategy="prior") gives).
+    rows = {}
+    for seed in (0, 1):
+        rng = np.random.default_rng(seed)
+        y = (rng.random(120) < 0.4).astype(int)
+        p = rng.beta(0.3, 0.3, 120)
+        rows[seed] = (p, y)
+    p, y = rows[0]
+    assert recalibrated_plugin_cutoff(p, y, np.ones(120), 0.2, 0)[1] == "class_shares"
+    assert recalibrated_plugin_cutoff(p, y, np.ones(120), 0.2, 0, crossfit=True) == (0.2, None)
+    p, y = rows[1]
+    anchor, how = recalibrated_plugin_cutoff(p, y, np.ones(120), 0.2, 0, crossfit=True)
+    assert how == "platt" and anchor < 0.0
+    dummy = DummyClassifier(strategy="prior").fit(p[:, None], y)
+    assert dummy.predict_proba(p[:1, None])[0, 1] > 0.2
