@@ -105,6 +105,10 @@ def test_rule_reads_the_row_bound_and_the_models_resolution():
     p_miss = p.copy()
     p_miss[0] = [0.005, 0.995]  # a class-0 row given 0.005 < 0.0119 for its own class
     assert contradicted_confidence(cal, p_miss, y, w, identity_kept=False) == "confident miss"
+    # a row at exactly 0 for its own class (underflow): no order left for the maps
+    p_zero = p_miss.copy()
+    p_zero[2] = [0.0, 1.0]
+    assert contradicted_confidence(cal, p_zero, y, w, identity_kept=False) is None
     # the same miss with weight 0 is not a row of the set
     w0 = w.copy()
     w0[0] = 0.0

@@ -57,7 +57,7 @@ def contradicted_confidence(cal: Any, proba: np.ndarray, y_idx: np.ndarray, w: n
     ``1 / (4 (N + 1))`` (half the map's output floor, :func:`heldout_clip`'s bound; a forest's
     grid of multiples of ``1 / n_trees`` does not reach it, and its exact 0 is its resolution).
     Then ``"confident miss"`` where a labelled row of weight > 0 got less than that bound for
-    its own class, or ``"kept over-confident"`` where the likelihood-ratio test keeps the
+    its own class (but none exactly 0: underflowed probabilities), or ``"kept over-confident"`` where the likelihood-ratio test keeps the
     model's own probabilities (``identity_kept``) while the fitted map's scale is below 1.
     """
     from ..calibration._base import count_weights
@@ -76,7 +76,9 @@ def contradicted_confidence(cal: Any, proba: np.ndarray, y_idx: np.ndarray, w: n
     if not (positive.size and float(positive.min()) < bound):
         return None
     own = p[np.flatnonzero(keep), np.asarray(y_idx)[keep]]
-    if own.size and float(own.min()) < bound:
+    if own.size and 0.0 < float(own.min()) < bound:
+        # (a row at exactly 0 for its own class: the probabilities have underflowed, and the
+        # maps chosen by folds see no order among them; measured worse, docs/prior_shift.md)
         return "confident miss"
     if identity_kept and float(np.max(cal.scale_)) < 1.0:
         return "kept over-confident"
