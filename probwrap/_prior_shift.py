@@ -129,8 +129,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     them, for an estimator cross-fitted here always the fitted map, as the test judged the fold
     models and not the refit one; the estimator's own probabilities with
     ``calibration=None``; of the refit model, or averaged over the fold models, see
-    ``predict_with``; on at most 200 labelled rows of two classes whose labels contradict the
-    model's confidence, the map ``CalibrationWrapper(method="auto")`` chooses on the same
+    ``predict_with``; on at most 200 labelled rows of two classes where a row got a probability
+    for its own class below what the rows can resolve, the map ``CalibrationWrapper(method="auto")`` chooses on the same
     held-out probabilities, ``output_map_``), re-weighted to the prior in use,
     ``applied_prior_``: ``target_prior`` when it is given; otherwise, after ``adapt``, the
     source prior moved toward the estimate ``target_prior_`` by the share the evidence
@@ -296,9 +296,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         Set where ``fit`` had at most 200 labelled rows (weights read as row counts, or Kish's
         effective size) of two classes, the model gave some of them a probability above 0 but
         below the row bound ``1 / (4 (N + 1))`` (near 0 or 1; a forest's grid of multiples of
-        ``1 / n_trees`` does not reach it), and either a labelled row got less than that bound
-        for its own class, or the likelihood-ratio test kept the model's own probabilities
-        while the fitted map's scale is below 1 (the rows say "over-confident"): ``CalibrationWrapper(method="auto",
+        ``1 / n_trees`` does not reach it), and a labelled row got less than that bound, but
+        not exactly 0, for its own class (its confidence contradicted): ``CalibrationWrapper(method="auto",
         random_state=random_state)`` fitted on the held-out probabilities, whose output
         ``predict_proba`` returns (re-weighted to ``applied_prior_`` after ``adapt``; the prior
         estimate still reads ``calibrator_``). None otherwise. Measured in
@@ -668,8 +667,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     def _choose_output_map(self, est: PriorEstimator, sample_weight: Any) -> None:
         """On at most 200 labelled rows of two classes, where the model gives probabilities
         nearer 0 or 1 than the row bound ``1 / (4 (N + 1))`` and the labels contradict that
-        confidence — a row given less than the bound for its own class, or the model's own
-        probabilities kept by the likelihood-ratio test while the fitted map softens them —
+        confidence — a row given less than the bound (but not exactly 0) for its own class —
         ``predict_proba`` returns the probabilities of ``CalibrationWrapper(method="auto")``
         fitted on the same held-out probabilities (``output_map_``;
         :mod:`probwrap.shift._output_map`). The map is fixed here, so ``adapt`` re-weights the
@@ -680,8 +678,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
         cal = est.calibrator_
         p, y_idx, w = est._src
-        reason = contradicted_confidence(cal, p, y_idx, w,
-                                         identity_kept=bool(getattr(cal, "identity_kept_", False)))
+        reason = contradicted_confidence(p, y_idx, w)
         if reason is None:
             return
         self.output_map_ = fit_output_map(p, y_idx, None if sample_weight is None else w,
