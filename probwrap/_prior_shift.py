@@ -129,7 +129,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     them, for an estimator cross-fitted here always the fitted map, as the test judged the fold
     models and not the refit one; the estimator's own probabilities with
     ``calibration=None``; of the refit model, or averaged over the fold models, see
-    ``predict_with``; on at most 200 labelled rows of two classes where a row got a probability
+    ``predict_with``; on at most 100 labelled rows of two classes where a row got a probability
     for its own class below what the rows can resolve, the map ``CalibrationWrapper(method="auto")`` chooses on the same
     held-out probabilities, ``output_map_``), re-weighted to the prior in use,
     ``applied_prior_``: ``target_prior`` when it is given; otherwise, after ``adapt``, the
@@ -293,7 +293,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     calibrator_ : BiasCorrectedScaling or None
         The calibration used for estimation and adjustment.
     output_map_ : CalibrationWrapper or None
-        Set where ``fit`` had at most 200 labelled rows (weights read as row counts, or Kish's
+        Set where ``fit`` had at most 100 labelled rows (weights read as row counts, or Kish's
         effective size) of two classes, the model gave some of them a probability above 0 but
         below the row bound ``1 / (4 (N + 1))`` (near 0 or 1; a forest's grid of multiples of
         ``1 / n_trees`` does not reach it), and a labelled row got less than that bound, but
@@ -665,7 +665,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         return (*counts, *(getattr(self, "_labelled_clumps", None) or ()))
 
     def _choose_output_map(self, est: PriorEstimator, sample_weight: Any) -> None:
-        """On at most 200 labelled rows of two classes, where the model gives probabilities
+        """On at most 100 labelled rows of two classes, where the model gives probabilities
         nearer 0 or 1 than the row bound ``1 / (4 (N + 1))`` and the labels contradict that
         confidence — a row given less than the bound (but not exactly 0) for its own class —
         ``predict_proba`` returns the probabilities of ``CalibrationWrapper(method="auto")``

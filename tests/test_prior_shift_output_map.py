@@ -119,14 +119,17 @@ def test_rule_reads_the_row_bound_and_the_models_resolution():
     p_grid = np.column_stack([1 - grid, grid])
     p_grid[0] = [0.0, 1.0]
     assert contradicted_confidence(p_grid, y, w) is None
-    # more than 200 rows, or three classes: never
-    big = np.tile(p_miss, (11, 1))
-    assert contradicted_confidence(big, np.tile(y, 11), np.ones(220)) is None
+    # more than 100 rows, or three classes: never
+    big = np.tile(p_miss, (6, 1))
+    assert contradicted_confidence(big, np.tile(y, 6), np.ones(120)) is None
+    hundred = np.tile(p, (5, 1))
+    hundred[0] = [0.0005, 0.9995]  # below 1 / (4 * 101) = 0.0025 for its own class 0
+    assert contradicted_confidence(hundred, np.tile(y, 5), np.ones(100)) == "confident miss"
     three = np.column_stack([p_miss * 0.9, np.full(20, 0.1)])
     assert contradicted_confidence(three, y, w) is None
 
 
-def test_untouched_beyond_200_rows():
+def test_untouched_beyond_100_rows():
     # the same naive Bayes with 230 labelled rows: the old map, whatever the rows say
     X, y, model, rest = _diabetes_nb()
     lab, test = _draw(rest, 230, 3)
