@@ -670,11 +670,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         confidence — a row given less than the bound (but not exactly 0) for its own class —
         ``predict_proba`` returns the probabilities of ``CalibrationWrapper(method="auto")``
         fitted on the same held-out probabilities (``output_map_``;
-        :mod:`probwrap.shift._output_map`). The map is fixed here, so ``adapt`` re-weights the
+        :mod:`probwrap._prior_shift_output_map`). The map is fixed here, so ``adapt`` re-weights the
         same probabilities and ``target_prior=source_prior_`` returns them unchanged; the prior
         estimate keeps ``calibrator_``'s map. Measured in docs/prior_shift.md, "Before adapt
         on small labelled sets"."""
-        from .shift._output_map import contradicted_confidence, fit_output_map
+        from ._prior_shift_output_map import contradicted_confidence, fit_output_map
 
         cal = est.calibrator_
         p, y_idx, w = est._src

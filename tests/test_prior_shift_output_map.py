@@ -13,8 +13,8 @@ from sklearn.frozen import FrozenEstimator
 from sklearn.naive_bayes import GaussianNB
 
 from probwrap import CalibrationWrapper, PriorShiftWrapper
+from probwrap._prior_shift_output_map import contradicted_confidence
 from probwrap.shift import adjust_to_prior
-from probwrap.shift._output_map import contradicted_confidence
 
 
 def _log_loss(y: np.ndarray, p: np.ndarray) -> float:

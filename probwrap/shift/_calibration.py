@@ -593,7 +593,7 @@ class BiasCorrectedScaling:
         """Posteriors to hand to a user: :meth:`predict`, or the model's own probabilities
         (at least ``floor_``, rows renormalised) when the likelihood-ratio test kept them; or,
         where :class:`probwrap.PriorShiftWrapper` set an ``output_map_`` (a small set whose
-        labelled rows contradict the model's confidence, :mod:`probwrap.shift._output_map`),
+        labelled rows contradict the model's confidence, :mod:`probwrap._prior_shift_output_map`),
         that map's probabilities."""
         output_map = getattr(self, "output_map_", None)
         if output_map is not None:

@@ -22,7 +22,7 @@ from typing import Any
 import numpy as np
 from sklearn.base import BaseEstimator, ClassifierMixin
 
-from ._calibration import _floor
+from .shift._calibration import _floor
 
 __all__ = ["OUTPUT_MAP_MAX_ROWS", "contradicted_confidence", "fit_output_map"]
 
@@ -59,7 +59,7 @@ def contradicted_confidence(proba: np.ndarray, y_idx: np.ndarray, w: np.ndarray)
     Then ``"confident miss"`` where a labelled row of weight > 0 got less than that bound for
     its own class (but none exactly 0: underflowed probabilities).
     """
-    from ..calibration._base import count_weights
+    from .calibration._base import count_weights
 
     p = np.asarray(proba, dtype=float)
     if p.ndim != 2 or p.shape[1] != 2:
@@ -93,8 +93,8 @@ def fit_output_map(proba: np.ndarray, y_idx: np.ndarray, w: np.ndarray | None,
     to ``owner``, which says the same about the same weights."""
     from sklearn.frozen import FrozenEstimator
 
-    from .._calibration_wrapper import CalibrationWrapper
-    from ..calibration import WeightScaleWarning
+    from ._calibration_wrapper import CalibrationWrapper
+    from .calibration import WeightScaleWarning
 
     p = np.asarray(proba, dtype=float)
     model = FrozenEstimator(_GivenProbabilities(p.shape[1]).fit())
