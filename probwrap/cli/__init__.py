@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import errno
 import importlib
 import os
 import re
@@ -25,6 +26,7 @@ from ._common import (
     StandardStream,
     clean,
     missing_extra_message,
+    set_running_verb,
 )
 
 __all__ = ["main", "DataError"]
@@ -146,6 +148,7 @@ def _run(argv: list[str] | None) -> int:
     except ValueError:  # not in the main thread: leave signals alone
         previous = None
     try:
+        set_running_verb(str(args.verb))
         return int(args.func(args) or 0)
     except DataError as exc:
         print(f"probwrap {args.verb}: error: {clean(' '.join(str(exc).split()))}",
@@ -156,6 +159,15 @@ def _run(argv: list[str] | None) -> int:
         if root not in OPTIONAL_MODULES:
             raise
         print(f"probwrap {args.verb}: error: {missing_extra_message(root)}", file=sys.stderr)
+        return 1
+    except OSError as exc:
+        if exc.filename is None:  # not about a path (a broken pipe, ...): handled above
+            raise
+        # a path the system refuses before any file is opened (a name over 255 bytes, ...)
+        hint = ("; a file or folder name may hold at most 255 bytes (and a whole path about "
+                "4096): shorten it") if exc.errno == errno.ENAMETOOLONG else ""
+        print(f"probwrap {args.verb}: error: {clean(str(exc.filename))}: "
+              f"{exc.strerror or clean(str(exc))}{hint}", file=sys.stderr)
         return 1
     except KeyboardInterrupt:
         print(f"probwrap {args.verb}: interrupted; files are replaced only when complete, so "

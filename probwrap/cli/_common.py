@@ -211,6 +211,21 @@ def one_line(exc: BaseException) -> str:
     return " ".join(str(exc).split())
 
 # -- messages ------------------------------------------------------------------------------------
+#: the verb being run (set by the command line's main), for warnings given where the verb is
+#: not passed down
+_RUNNING = {"verb": ""}
+
+
+def running_verb() -> str:
+    """The verb being run ("" outside :func:`probwrap.cli.main`)."""
+    return _RUNNING["verb"]
+
+
+def set_running_verb(verb: str) -> None:
+    """Record the verb being run (see :func:`running_verb`)."""
+    _RUNNING["verb"] = verb
+
+
 def warn_line(verb: str, message: str) -> None:
     """One warning line on stderr: ``probwrap VERB: warning: ...``."""
     print(f"probwrap {verb}: warning: {clean(' '.join(message.split()))}", file=sys.stderr)

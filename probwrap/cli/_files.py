@@ -58,15 +58,27 @@ def check_out_suffix(
         )
 
 
+def _no_folder(path: Path, folder: Path, exc: OSError) -> str:
+    """The message for a folder that cannot be created, naming a file standing in its way
+    (``--out scores.csv/map.json``: "the folder scores.csv cannot be created (File exists)"
+    did not say that scores.csv is a file)."""
+    for part in (folder, *folder.parents):
+        try:
+            if part.exists() and not part.is_dir():
+                return (f"{path}: {part} is a file, not a folder, so nothing can be written "
+                        "inside it; give another path")
+        except OSError:
+            break
+    return f"{path}: the folder {folder} cannot be created ({exc.strerror or exc})"
+
+
 def _prepare_folder(path: Path) -> None:
     if path.is_dir():
         raise DataError(f"{path}: is a folder; give a file name")
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise DataError(
-            f"{path}: the folder {path.parent} cannot be created ({exc.strerror or exc})"
-        ) from None
+        raise DataError(_no_folder(path, path.parent, exc)) from None
 
 
 def check_writable(path: str | Path, *, folder: bool = False) -> None:
@@ -90,9 +102,7 @@ def check_writable(path: str | Path, *, folder: bool = False) -> None:
     try:
         target_dir.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise DataError(
-            f"{path}: the folder {target_dir} cannot be created ({exc.strerror or exc})"
-        ) from None
+        raise DataError(_no_folder(path, target_dir, exc)) from None
     if not os.access(target_dir, os.W_OK | os.X_OK):
         raise DataError(f"{path}: cannot be written (the folder {target_dir} is read-only)")
 

@@ -110,8 +110,14 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                                               "newline": _line_end(path, encoding),
                                               "sep_line": _has_sep_line(path, encoding)}
             elif decimal == ",":  # columns read as text keep their decimal commas: make dots
+                grouped = {}
                 for column in set(exact) & set(frame.columns):
-                    frame[column] = frame[column].str.replace(",", ".", regex=False)
+                    written = frame[column].to_numpy(dtype=object)
+                    fields, count, first = _plain_number_text(written, ",", path, column)
+                    frame[column] = pd.Series(fields, index=frame.index, dtype=object)
+                    if count:
+                        grouped[column] = (count, first, str(written[first]))
+                frame.attrs["grouped_numbers"] = grouped  # warned of by numeric_column
             header = _csv_header(path, encoding, sep)
             if header is not None and len(header) == 1:
                 frame = _blank_lines_as_missing(pd, frame, path, encoding, sep)
@@ -120,11 +126,7 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     except pd.errors.EmptyDataError:
         raise DataError(f"{path}: the file is empty") from None
     except UnicodeDecodeError as exc:
-        raise DataError(
-            f"{path}: is not UTF-8 text (byte 0x{exc.object[exc.start]:02x} at position "
-            f"{exc.start} cannot be read); save it as CSV UTF-8 (or UTF-16 with a byte-order "
-            "mark), or as Parquet"
-        ) from None
+        raise DataError(_not_utf8(path, exc)) from None
     except (MemoryError, KeyboardInterrupt):
         raise
     except Exception as exc:  # parsing errors of any kind: report, do not trace back
@@ -349,6 +351,38 @@ def _open_bytes(path: Path) -> Any:
     return importlib.import_module(kind).open(path, "rb")
 
 
+def _not_utf8(path: Path, exc: UnicodeDecodeError) -> str:
+    """The message for a CSV file that is not UTF-8: the first byte that cannot be read, its
+    line and column, the line as the Windows-1252 code page (Western Europe; ISO Latin-1
+    differs only in characters no header uses) would show it, and how to save the file."""
+    byte, position = exc.object[exc.start], exc.start
+    where, shown_line = "", ""
+    try:  # the first undecodable line, counted in the (decompressed) file itself
+        with _open_bytes(path) as handle:
+            offset = 0
+            for number, line in enumerate(handle, start=1):
+                try:
+                    line.decode("utf-8")
+                except UnicodeDecodeError as bad:
+                    byte, position = line[bad.start], offset + bad.start
+                    text = line.rstrip(b"\r\n").decode("cp1252", errors="replace")
+                    where = f" in line {number}{' (the header)' if number == 1 else ''}"
+                    shown_line = (f"; read as Windows-1252 (Western European), that line is "
+                                  f"{shown(text[:120] + ('...' if len(text) > 120 else ''))}")
+                    break
+                offset += len(line)
+    except _UNREADABLE:
+        pass
+    plain = (path.suffix.lower() not in (".gz", ".bz2", ".xz", ".zip")
+             and not path.parent.name.startswith("probwrap-stdin-"))
+    convert = (f", convert it (iconv -f WINDOWS-1252 -t UTF-8 {shlex.quote(path.name)} > "
+               "utf8.csv)" if plain and shown_line else "")
+    return (f"{path}: is not UTF-8 text (byte 0x{byte:02x} at position {position}{where} "
+            f"cannot be read{shown_line}); the encoding is not guessed: save it as CSV UTF-8 "
+            "(a choice of the spreadsheet's Save As; UTF-16 with a byte-order mark is read "
+            f"too){convert}, or save it as Parquet")
+
+
 def _open_text(path: Path, encoding: str, errors: str = "strict") -> Any:
     """The (decompressed) file opened as text, line ends kept as written (for ``csv``)."""
     import io
@@ -510,15 +544,21 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
     if column not in frame.columns:
         raise no_column(frame, column, path, flag)
     series = frame[column]
+    grouped = None
     if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(
         series.dtype
     ):
         values = series.to_numpy(dtype=float, na_value=np.nan)
     else:
         raw = series.to_numpy(dtype=object)
-        if frame.attrs.get("decimal") == ",":  # a table kept as written (read_table as_text)
-            raw = np.array([v.replace(",", ".") if isinstance(v, str) else v for v in raw],
-                           dtype=object)
+        # decimal commas of a table kept as written (read_table as_text) made points, and
+        # thousands separators dropped where the form leaves no doubt (1.391,03 with decimal
+        # commas, 3,703.50 with decimal points); an ambiguous 2.500 is refused
+        written = raw
+        raw, count, first = _plain_number_text(raw, frame.attrs.get("decimal", "."), path,
+                                               column)
+        grouped = ((count, first, str(written[first])) if count else
+                   frame.attrs.get("grouped_numbers", {}).get(column))
         try:
             values = np.array(
                 ["nan" if v is None or v is pd.NA or (isinstance(v, float) and v != v) else v
@@ -544,8 +584,77 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
         what = ("the value is missing" + missing_count_text(path, series.isna().to_numpy())
                 if pd.isna(raw_value) else
                 f"{shown(raw_value)} is not a finite number{hint or _number_hint(raw_value)}")
-        raise DataError(f"{_row(path, column, row)}: {what}")
+        raise DataError(f"{_row(path, column, row)}: {what}{_last_row_hint(bad)}")
+    if grouped:
+        _warn_grouped(path, column, flag, *grouped, values[grouped[1]])
     return values
+
+
+#: thousands separated by dots and a decimal comma (1.391,03): read only where the file's
+#: decimal mark is a comma
+_DOT_GROUPS_COMMA = re.compile(r"[-+]?[1-9]\d{0,2}(?:\.\d{3})+,\d+")
+#: thousands separated by dots and no decimals (2.500): 2500 or 2.5, which cannot be told apart
+_DOT_GROUPS = re.compile(r"[-+]?[1-9]\d{0,2}(?:\.\d{3})+")
+#: thousands separated by commas and a decimal point (3,703.50): read where the decimal mark
+#: is a point
+_COMMA_GROUPS_DOT = re.compile(r"[-+]?[1-9]\d{0,2}(?:,\d{3})+\.\d+")
+
+
+def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
+                       column: str) -> tuple[np.ndarray, int, int]:
+    """Text fields of a number column with a decimal point and no thousands separators.
+
+    ``decimal``: the file's decimal mark. With ``","`` every comma becomes a point, and a field
+    with dots between groups of three digits and a decimal comma (``1.391,03``) loses its dots;
+    a field with such dots and no decimal comma (``2.500``: 2500, or 2.5 written with a point)
+    is refused, naming the row. With ``"."`` a field with commas between groups of three digits
+    and a decimal point (``3,703.50``) loses its commas; other fields are left for the number
+    parser to judge. Returns the fields, how many lost separators, and the first such row.
+    """
+    out = raw.copy()
+    count, first = 0, 0
+    mark = "." if decimal == "," else ","
+    for i, value in enumerate(raw):
+        if not isinstance(value, str):
+            continue
+        if mark not in value:
+            if decimal == "," and "," in value:
+                out[i] = value.replace(",", ".")
+            continue
+        text = value.strip()
+        if decimal == ",":
+            if _DOT_GROUPS_COMMA.fullmatch(text):
+                out[i] = text.replace(".", "").replace(",", ".")
+            elif _DOT_GROUPS.fullmatch(text):
+                plain = text.replace(".", "")
+                raise DataError(
+                    f"{_row(path, column, i)}: {shown(value)} could be {plain} (a dot between "
+                    f"thousands, as written with the decimal comma this file uses) or {text} "
+                    "(a decimal point): it cannot be told which; write the column without "
+                    "thousands separators"
+                )
+            else:
+                out[i] = value.replace(",", ".")  # a point already there is left as written
+                continue
+        elif _COMMA_GROUPS_DOT.fullmatch(text):
+            out[i] = text.replace(",", "")
+        else:
+            continue
+        if not count:
+            first = i
+        count += 1
+    return out, count, first
+
+
+def _warn_grouped(path: str | Path, column: str, flag: str, count: int, first: int,
+                  written: str, read: float) -> None:
+    """The warning that thousands separators were dropped from a number column."""
+    from ._common import running_verb
+
+    warn_line(running_verb(), (
+        f"{path}: column {shown(column)} ({flag}): {count} number{'s' if count > 1 else ''} "
+        f"written with thousands separators, such as {shown(written.strip())} in "
+        f"{row_number(path, first)}, read as {shown(read)} (only the separators are dropped)"))
 
 
 #: a number written with a comma in it (a thousands separator or a decimal comma): 3,000 or
@@ -585,9 +694,19 @@ def probability_column(frame: Any, column: str, path: str | Path, *, flag: str,
             hint = "use --scale log-odds for log-odds scores"
         raise DataError(
             f"{_row(path, column, row)}: {shown(values[row])} is not a probability in [0, 1] "
-            f"({hint})"
+            f"({hint}){_last_row_hint(bad)}"
         )
     return values
+
+
+def _last_row_hint(bad: np.ndarray) -> str:
+    """After a message about a bad row: when the only bad row is the table's last one, that it
+    may be a totals or notes row (spreadsheets add one below the data), or ""."""
+    rows = np.flatnonzero(bad)
+    if rows.shape[0] != 1 or rows[0] != bad.shape[0] - 1 or bad.shape[0] < 2:
+        return ""
+    return ("; it is the last row of the table: if it holds totals or notes, delete it (every "
+            "row is read as data)")
 
 
 def _number(value: Any) -> float | None:
@@ -619,7 +738,7 @@ def read_labels(
     if missing.any():
         row = int(np.flatnonzero(missing)[0])
         raise DataError(f"{_row(path, column, row)}: the label is missing"
-                        + missing_count_text(path, missing))
+                        + missing_count_text(path, missing) + _last_row_hint(missing))
     if pd.api.types.is_numeric_dtype(series.dtype) or pd.api.types.is_bool_dtype(series.dtype):
         values = series.to_numpy()
     else:
@@ -632,6 +751,10 @@ def read_labels(
         hint = ("; some differ only in spaces around them or in case, and are read as "
                 "different labels: write each label one way") if (
             distinct.shape[0] > 2 and len(tidy) < distinct.shape[0]) else ""
+        if distinct.shape[0] == 3 and not hint:  # a label found only on the last row
+            if _last_row_hint(values == values[-1]):
+                hint = (f"; {shown(values[-1])} is found only on the last row of the table: if "
+                        "that row holds totals or notes, delete it (every row is read as data)")
         raise DataError(
             f"{path}: column {shown(column)} must hold exactly two labels (binary outcome); it "
             f"holds {distinct.shape[0]}: {shown_labels}{more}{hint}"
