@@ -208,3 +208,31 @@ def test_output_under_a_file_says_it_is_a_file(medpar, tmp_path, capsys):
                        "--label-column", "died", "--out", tmp_path / "plain.csv" / "map.json")
     assert code == 1
     assert f"{plain} is a file, not a folder, so nothing can be written inside it" in err
+
+
+def test_space_thousands_french_export_read_with_warning(medpar, tmp_path, capsys):
+    # French spreadsheets separate thousands with a no-break space: never a decimal mark
+    plain = tmp_path / "plain.csv"
+    medpar.to_csv(plain, index=False)
+    path = tmp_path / "fr.csv"
+    lines = ["id;died;cost;p"] + [
+        f"{r.id};{r.died};{_euro(r.cost, 2).replace('.', chr(0xA0))};{_euro(r.p, 6)}"
+        for r in medpar.itertuples()]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    code_a, out_a, _ = _cutoff(capsys, plain, "cost")
+    code_b, out_b, err_b = _cutoff(capsys, path, "cost")
+    assert code_a == 0 and code_b == 0, err_b
+    assert json.loads(out_a) == json.loads(out_b)
+    assert "numbers written with thousands separators, such as '" in err_b
+
+
+def test_bad_field_in_decimal_comma_file_shown_as_written(medpar, tmp_path, capsys):
+    # the message showed '12.5 kg' (its comma turned into a point): a value nobody wrote
+    path = tmp_path / "unit.csv"
+    rows = [f"{r.id};{r.died};{_euro(r.w, 0) if r.w < 1000 else int(r.w)};{_euro(r.p, 6)}"
+            for r in medpar.itertuples()]
+    rows[4] = rows[4].rsplit(";", 2)[0] + ";12,5 kg;" + rows[4].rsplit(";", 1)[1]
+    path.write_text("id;died;w;p\n" + "\n".join(rows) + "\n", encoding="utf-8")
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1 and "column 'w', row 6 (counting the header as row 1): '12,5 kg' is not a " \
+        "finite number" in err

@@ -604,12 +604,15 @@ def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
                        column: str) -> tuple[np.ndarray, int, int]:
     """Text fields of a number column with a decimal point and no thousands separators.
 
-    ``decimal``: the file's decimal mark. With ``","`` every comma becomes a point, and a field
-    with dots between groups of three digits and a decimal comma (``1.391,03``) loses its dots;
-    a field with such dots and no decimal comma (``2.500``: 2500, or 2.5 written with a point)
-    is refused, naming the row. With ``"."`` a field with commas between groups of three digits
-    and a decimal point (``3,703.50``) loses its commas; other fields are left for the number
-    parser to judge. Returns the fields, how many lost separators, and the first such row.
+    ``decimal``: the file's decimal mark. With ``","`` every comma of a number becomes a point,
+    and a field with dots between groups of three digits and a decimal comma (``1.391,03``)
+    loses its dots; a field with such dots and no decimal comma (``2.500``: 2500, or 2.5
+    written with a point) is refused, naming the row. With ``"."`` a field with commas between
+    groups of three digits and a decimal point (``3,703.50``) loses its commas. In both, spaces
+    between groups of three digits (``1 234,5``; French spreadsheets write a no-break space)
+    are dropped, since a space is never a decimal mark. Any other field is left as written for
+    the number parser to judge (and a message to show as written). Returns the fields, how many
+    lost separators, and the first such row.
     """
     out = raw.copy()
     count, first = 0, 0
@@ -617,12 +620,17 @@ def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
     for i, value in enumerate(raw):
         if not isinstance(value, str):
             continue
-        if mark not in value:
+        spaced = any(space in value for space in _GROUP_SPACES)
+        if mark not in value and not spaced:
             if decimal == "," and "," in value:
-                out[i] = value.replace(",", ".")
+                point = value.replace(",", ".")
+                if _is_number(point):  # otherwise left as written, for the message
+                    out[i] = point
             continue
         text = value.strip()
-        if decimal == ",":
+        if spaced and _SPACE_GROUPS[decimal].fullmatch(text):
+            out[i] = re.sub(r"\s", "", text).replace(",", ".")
+        elif decimal == ",":
             if _DOT_GROUPS_COMMA.fullmatch(text):
                 out[i] = text.replace(".", "").replace(",", ".")
             elif _DOT_GROUPS.fullmatch(text):
@@ -634,7 +642,9 @@ def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
                     "thousands separators"
                 )
             else:
-                out[i] = value.replace(",", ".")  # a point already there is left as written
+                point = value.replace(",", ".")  # a point already there is left as written
+                if _is_number(point):
+                    out[i] = point
                 continue
         elif _COMMA_GROUPS_DOT.fullmatch(text):
             out[i] = text.replace(",", "")
@@ -644,6 +654,24 @@ def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
             first = i
         count += 1
     return out, count, first
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
+#: spaces written between groups of digits: a space, a no-break space, a narrow no-break space
+_GROUP_SPACES = (" ", "\u00a0", "\u202f")
+#: thousands separated by spaces, with the file's decimal mark or no decimals: 1 234,5 / 1 234.5
+_SPACE_GROUPS = {
+    mark: re.compile(r"[-+]?[1-9]\d{0,2}(?:[ \u00a0\u202f]\d{3})+(?:" + re.escape(mark)
+                     + r"\d+)?")
+    for mark in (",", ".")
+}
 
 
 def _warn_grouped(path: str | Path, column: str, flag: str, count: int, first: int,
