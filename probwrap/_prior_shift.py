@@ -111,6 +111,28 @@ def moved_prior(source_prior: Any, estimate: Any, weight: float) -> np.ndarray:
     return moved / moved.sum()
 
 
+def _row_identity_codes(X: Any) -> np.ndarray | None:
+    """Codes ``0 .. G - 1`` of the rows of ``X``, equal where two rows agree in every feature
+    (a pandas DataFrame, by pandas' row hash; a numeric 2-d NumPy array, by
+    :func:`probwrap._heldout._row_hashes`), as floats; None for other inputs (sparse matrices,
+    object arrays, Dask or Spark rows), whose repeats are then judged by their posteriors
+    alone."""
+    from ._heldout import _row_hashes
+
+    try:
+        if hasattr(X, "iloc") and hasattr(X, "columns") and not _is_dask(X):
+            import pandas as pd
+
+            keys = pd.util.hash_pandas_object(X, index=False).to_numpy()
+        elif isinstance(X, np.ndarray) and X.ndim == 2 and X.dtype.kind in "biuf":
+            keys = _row_hashes(X)
+        else:
+            return None
+        return np.unique(keys, return_inverse=True)[1].ravel().astype(float)
+    except (TypeError, ValueError):
+        return None
+
+
 class PriorShiftWrapper(HeldOutClassifierBase):
     """Correct a classifier's probabilities for a change of class priors (prior / label shift).
 
@@ -581,6 +603,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.refit_spread_ratios_, self.fold_spread_variation_ = np.empty(0), np.nan
         self._labelled_repeats = None  # (adapt's RepeatedRowsWarning)
         self._labelled_clumps = None
+        self._labelled_row_reference = None
         self._fold_share = None
         if _multiclass_dask(self.estimator, X, y, sample_weight):
             # Multiclass Dask rows: no tally (a posterior vector has no single score); the
@@ -655,10 +678,17 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self._labelled_repeats = self._repeat_counts(X, est, ho.n_folds)
         return self
 
-    def _repeat_reference(self) -> tuple | None:
+    def _repeat_reference(self, by_rows: bool = False) -> tuple | None:
         """What every repeat check reads of the labelled rows (``adapt``, ``monitor`` in
         memory, on Dask and on Spark): their tie counts and how their identical rows clump
-        (:func:`probwrap.shift._repeats.repeats_of_rows`); None where not kept."""
+        (:func:`probwrap.shift._repeats.repeats_of_rows`); None where not kept.
+
+        ``by_rows``: the same with only the pairs that also agree in every feature counted as
+        tied (read at ``fit`` where the labelled rows were in memory, a DataFrame or a numeric
+        array: :func:`_row_identity_codes`), for unlabelled rows in memory grouped alike
+        (:meth:`_warn_repeats`, ``monitor`` in memory); None where not read."""
+        if by_rows:
+            return getattr(self, "_labelled_row_reference", None)
         counts = getattr(self, "_labelled_repeats", None)
         if counts is None:
             return None
@@ -693,7 +723,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``predict_proba`` of them; within the folds of the cross-fit there are about ``1 / K``
         as many pairs: on R's infert, 165 labelled rows, the rate within five folds, 0.0024,
         was a low draw of the 0.0043 over all pairs). None where the labelled rows are not
-        kept as rows (``adapt`` then does not judge its rows' repeats)."""
+        kept as rows (``adapt`` then does not judge its rows' repeats).
+
+        Where the labelled rows are in memory (a DataFrame or a numeric array), the same
+        counts and clumps with the rows' feature codes (:func:`_row_identity_codes`) as one
+        more block are kept as ``_repeat_reference(by_rows=True)``: a model whose posteriors
+        saturate at exactly 0 or 1, or a tree's leaves, give distinct rows identical posteriors
+        (since 5 December 2026; benchmarks/shift_real_hunt24.py)."""
         from .shift._repeats import labelled_clumps, labelled_repeat_counts
 
         src = est._source_rows()
@@ -710,6 +746,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 return None
         # (and how the identical rows clump: the chance spread of the count of ties)
         self._labelled_clumps = labelled_clumps(proba, src[1], k)
+        row_codes = _row_identity_codes(X)
+        if row_codes is not None and row_codes.shape[0] == proba.shape[0]:
+            both = np.column_stack([
+                np.asarray(proba, dtype=float).reshape(proba.shape[0], -1), row_codes])
+            self._labelled_row_reference = (*labelled_repeat_counts(both, src[1], k),
+                                            *labelled_clumps(both, src[1], k))
         return labelled_repeat_counts(proba, src[1], k)
 
     def _choose_predicting_models(self, X: Any, est: PriorEstimator) -> None:
@@ -950,7 +992,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             or Spark rows and after a fit on more than 20,000 Dask or Spark rows
             (docs/scale.md, "Limits of the Dask path"). None (rows in
             memory): every row is its own unit; where the rows repeat one another (identical
-            posteriors) far more often than independent draws of the labelled classes do, a
+            features and posteriors for rows in memory, a DataFrame or a numeric array;
+            identical posteriors otherwise) far more often than independent draws of the
+            labelled classes do, a
             :class:`~probwrap.shift.RepeatedRowsWarning` says so (since 4 December 2026; for
             at most 20,000 Dask or Spark rows too since 5 December 2026, not beyond), and
             cells grouping the identical rows count each group once.
@@ -1052,8 +1096,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             folds = self._fold_proba(X)
             if cells is None:
                 # rows repeating one another beyond chance (resampled or copied rows): the
-                # interval and the shift test count them as independent (RepeatedRowsWarning)
-                self._warn_repeats(proba, folds, sample_weight)
+                # interval and the shift test count them as independent (RepeatedRowsWarning);
+                # rows in memory are grouped by their features as well (since 5 December 2026)
+                self._warn_repeats(proba, folds, sample_weight,
+                                   row_codes=_row_identity_codes(X))
         poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
             self.interval == "score" and not multiclass
         )
@@ -1078,7 +1124,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self._warn_repeats(proba, folds, sample_weight, stacklevel=6)
 
     def _warn_repeats(self, proba: np.ndarray, folds: Any, sample_weight: Any,
-                      stacklevel: int = 3) -> None:
+                      stacklevel: int = 3, row_codes: np.ndarray | None = None) -> None:
         """Warn (:class:`~probwrap.shift.RepeatedRowsWarning`) when the unlabelled rows repeat
         one another far more often than independent draws of the labelled classes do; nothing
         where the labelled rows were not kept as rows.
@@ -1090,15 +1136,28 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         from half of the rows missed the truth with intervals that looked firm
         (docs/prior_shift.md, "Confident misses on real sets"). The estimate, the interval and
         the test are unchanged: ``cells`` (each group of identical rows one cell) counts the
-        repeats as such, which the user decides."""
+        repeats as such, which the user decides.
+
+        With ``row_codes`` (:func:`_row_identity_codes` of the rows in memory), where the
+        labelled rows' were read at ``fit`` too, rows count as identical only where their
+        features agree as well, on both sides: a model whose posteriors saturate at exactly 0
+        or 1 gives distinct rows the same posteriors (R's Ecdat Housing, Gaussian naive Bayes:
+        12 of 179 distinct unlabelled rows at exactly 0 against 4 of 182 labelled rows, and the
+        warning said that 11 rows repeated another; benchmarks/shift_real_hunt24.py). Dask and
+        Spark rows (``_warn_repeats_distributed``) are grouped by their posteriors alone."""
         from .shift._repeats import RepeatedRowsWarning, repeats_of_rows, rows_repeat_message
 
-        found = repeats_of_rows(self.prior_estimator_, self._repeat_reference(), proba, folds,
-                                sample_weight)
+        reference = self._repeat_reference(by_rows=True)
+        if row_codes is None or reference is None or (
+                row_codes.shape[0] != np.asarray(proba).shape[0]):
+            reference, row_codes = self._repeat_reference(), None
+        found = repeats_of_rows(self.prior_estimator_, reference, proba, folds,
+                                sample_weight, row_codes=row_codes)
         if found is None:
             return
+        words = rows_repeat_message(found, by_features=row_codes is not None)
         warnings.warn(
-            f"adapt: {rows_repeat_message(found)}. The shift test and target_prior_interval_ "
+            f"adapt: {words}. The shift test and target_prior_interval_ "
             "count every "
             "row as an independent draw; rows resampled with replacement from a pool, or copied "
             "records, are not, and the interval is then too narrow (it can miss the share with "
@@ -1443,7 +1502,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 # each batch's rows repeating one another beyond chance, as adapt judges its
                 # rows (RepeatedRowsWarning; since 5 December 2026)
                 self._warn_batch_repeats(table, proba, batches, batch_size, sample_weight,
-                                         folds)
+                                         folds, _row_identity_codes(X))
         else:
             # Fitted on Dask input: the labelled rows are a tally, so each batch's interval is
             # a Poisson bootstrap over the tally's replicates and the batch's rows.
@@ -1452,13 +1511,18 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         return table
 
     def _warn_batch_repeats(self, table: np.ndarray, proba: np.ndarray, batches: Any,
-                            batch_size: Any, sample_weight: Any, folds: Any) -> None:
+                            batch_size: Any, sample_weight: Any, folds: Any,
+                            row_codes: np.ndarray | None = None) -> None:
         """``monitor``'s :class:`~probwrap.shift.RepeatedRowsWarning` (rows in memory): once,
         naming the batches whose rows repeat one another beyond chance, each batch judged by
         the rule ``adapt`` applies to its rows (:func:`probwrap.shift._repeats.repeats_of_rows`;
-        Dask workers and Spark executors apply it to their batches alike). Nothing where the
-        labelled rows were not kept as rows."""
-        counts = self._repeat_reference()
+        Dask workers and Spark executors apply it to their batches alike, by posteriors alone).
+        With ``row_codes`` (:func:`_row_identity_codes` of the rows) and the labelled rows'
+        read at ``fit``, rows are identical only where their features agree too, as in
+        ``adapt``. Nothing where the labelled rows were not kept as rows."""
+        counts = self._repeat_reference(by_rows=True)
+        if row_codes is None or counts is None or row_codes.shape[0] != proba.shape[0]:
+            counts, row_codes = self._repeat_reference(), None
         if counts is None or table.shape[0] == 0:
             return
         from .scale._entry import warn_batch_repeats
@@ -1477,8 +1541,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             found.append((b, repeats_of_rows(
                 self.prior_estimator_, counts, proba[rows],
                 None if folds is None else [np.asarray(f)[rows] for f in folds],
-                None if w is None else w[rows])))
-        warn_batch_repeats(found, table.shape[0], stacklevel=4)
+                None if w is None else w[rows],
+                row_codes=None if row_codes is None else row_codes[rows])))
+        warn_batch_repeats(found, table.shape[0], stacklevel=4,
+                           by_features=row_codes is not None)
 
     def _warn_imprecise_batches(self, table: np.ndarray) -> None:
         """``monitor``'s :class:`~probwrap.shift.ImprecisePriorWarning`: once per call, naming

@@ -625,16 +625,19 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
     return table
 
 
-def warn_batch_repeats(per_batch: list, n_batches: int, *, stacklevel: int = 5) -> None:
+def warn_batch_repeats(per_batch: list, n_batches: int, *, stacklevel: int = 5,
+                       by_features: bool = False) -> None:
     """``monitor``'s one :class:`~probwrap.shift.RepeatedRowsWarning` for the batches whose
     rows repeat one another beyond chance; ``per_batch``: ``[(batch label,
     repeats_of_rows(...) or None), ...]`` in table order (the same words in memory, on Dask
-    and on Spark: :func:`probwrap.shift._repeats.batch_repeats_message`)."""
+    and on Spark: :func:`probwrap.shift._repeats.batch_repeats_message`; ``by_features``:
+    rows in memory grouped by their features as well as their posteriors)."""
     from ..shift._repeats import RepeatedRowsWarning, batch_repeats_message
 
     found = [(plain(b), f) for b, f in per_batch if f is not None]
     if found:
-        warnings.warn(batch_repeats_message(found, n_batches), RepeatedRowsWarning,
+        warnings.warn(batch_repeats_message(found, n_batches, by_features=by_features),
+                      RepeatedRowsWarning,
                       stacklevel=stacklevel)
 
 

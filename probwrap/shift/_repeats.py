@@ -26,6 +26,13 @@ weight of a group of identical rows), is well above it, ``PriorShiftWrapper.adap
 chance spread of the count of tied pairs, which is large where a few values hold many rows
 (rounded or clipped scores): :func:`repeats_beyond_chance`, with how the labelled rows' identical
 posteriors clump (:func:`labelled_clumps`; since 5 December 2026).
+
+Rows in memory (a DataFrame or a numeric array, labelled and unlabelled alike) are identical
+only where their features agree as well: ``PriorShiftWrapper`` passes codes of the rows'
+features as one more block, to the labelled counts and clumps at ``fit`` and to
+:func:`repeats_of_rows` (``row_codes``), since distinct rows share posteriors where a model
+saturates at exactly 0 or 1 or a tree's leaves tie them (since 5 December 2026). Dask and Spark
+rows, and scores read from files, are grouped by their posteriors alone.
 """
 
 from __future__ import annotations
@@ -53,9 +60,17 @@ REPEAT_EXCESS = 1.25
 
 
 class RepeatedRowsWarning(UserWarning):
-    """The unlabelled rows repeat one another (identical posteriors) far more often than
-    independent draws of the labelled classes do, so the interval of their class shares and the
-    shift test, which count every row as an independent draw, are too sure.
+    """The unlabelled rows repeat one another (identical rows) far more often than independent
+    draws of the labelled classes do, so the interval of their class shares and the shift test,
+    which count every row as an independent draw, are too sure.
+
+    Identical rows: rows in memory (a pandas DataFrame or a numeric NumPy array, on both the
+    labelled rows at ``fit`` and the rows judged) are identical where their features and their
+    posteriors agree exactly (since 5 December 2026: a model whose posteriors saturate at
+    exactly 0 or 1, or a tree's leaves, give distinct rows the same posteriors, and a forest's
+    tied vote shares hid copied rows); Dask and Spark rows, other inputs (sparse matrices,
+    object arrays) and scores read from files (``probwrap prevalence --reference``) are
+    grouped by their posteriors alone, the labelled rows' rate of coincidences read alike.
 
     Raised by ``PriorShiftWrapper.adapt`` (no ``cells`` given; rows in memory, or at most
     20,000 Dask or Spark rows, whose rows come to the client) when the design effect of the
@@ -216,7 +231,8 @@ def excess_repeats(codes: np.ndarray, sample_weight: np.ndarray | None,
 
 
 def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_proba=None,
-                    sample_weight: np.ndarray | None = None) -> tuple[int, int, float, float] | None:
+                    sample_weight: np.ndarray | None = None, *,
+                    row_codes: np.ndarray | None = None) -> tuple[int, int, float, float] | None:
     """The check behind :class:`RepeatedRowsWarning` on one set of unlabelled rows: ``(rows,
     distinct rows, observed design effect, the largest one independent draws give)`` where the
     rows repeat one another beyond chance (:func:`repeats_beyond_chance`), None otherwise.
@@ -228,7 +244,10 @@ def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_pro
     ``labelled_repeat_counts`` of its labelled rows, followed by their :func:`labelled_clumps`
     (``(tied, pairs, Q, S)``; the first two alone: without the clumps' variance) or None (not
     kept as rows, nothing judged);
-    ``fold_proba``: the fold models' posteriors of the same rows (identical rows agree in all).
+    ``fold_proba``: the fold models' posteriors of the same rows (identical rows agree in all);
+    ``row_codes``: codes of the rows' features (equal where the rows agree in every feature),
+    one more block in which identical rows agree, with ``counts`` read from the labelled rows
+    grouped alike (``PriorShiftWrapper._repeat_reference(by_rows=True)``).
     The shares of the mix are the source's and the rows' maximum-likelihood estimate (the rate
     of coincidences differs by class; the larger of the two is taken).
 
@@ -255,7 +274,8 @@ def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_pro
     p = np.asarray(proba, dtype=float)
     if counts is None or getattr(estimator, "n_resamples", 0) == 0 or p.shape[0] < 2:
         return None
-    codes = identical_row_codes(p, *(fold_proba or []))
+    blocks = [*(fold_proba or []), *(() if row_codes is None else (row_codes,))]
+    codes = identical_row_codes(p, *blocks)
     groups = int(codes.max()) + 1
     if groups == codes.shape[0]:
         return None  # no row repeats
@@ -277,24 +297,28 @@ def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_pro
     return int(codes.shape[0]), groups, float(observed), float(expected)
 
 
-def rows_repeat_message(found: tuple[int, int, float, float]) -> str:
-    """The numbers of :func:`repeats_of_rows` in words (one set of rows)."""
+def rows_repeat_message(found: tuple[int, int, float, float], by_features: bool = False) -> str:
+    """The numbers of :func:`repeats_of_rows` in words (one set of rows; ``by_features``: the
+    rows were grouped by their features as well as their posteriors)."""
     n, groups, observed, expected = found
+    same = "features and posteriors" if by_features else "posteriors"
     return (f"{n - groups} of the {n} unlabelled rows repeat another row exactly (the same "
-            f"posteriors; {groups} distinct rows), a design effect of {observed:.3g} where "
+            f"{same}; {groups} distinct rows), a design effect of {observed:.3g} where "
             f"independent draws of these classes give at most {expected:.3g} (from how often "
             "labelled rows coincide)")
 
 
-def batch_repeats_message(found: list, n_batches: int) -> str:
+def batch_repeats_message(found: list, n_batches: int, by_features: bool = False) -> str:
     """``monitor``'s :class:`RepeatedRowsWarning` for the batches whose rows repeat beyond
     chance, ``found`` = ``[(batch label, repeats_of_rows(...)), ...]`` in table order: the same
-    words whether the batches were judged in memory, on Dask workers or Spark executors."""
+    words whether the batches were judged in memory, on Dask workers or Spark executors (rows
+    in memory grouped by their features too: ``by_features``)."""
     names = ", ".join(str(b) for b, _ in found[:8]) + (", ..." if len(found) > 8 else "")
     first, numbers = found[0]
     return (
         f"monitor: in {len(found)} of {n_batches} batches (batch {names}) the rows repeat one "
-        f"another far beyond chance; first, batch {first}: {rows_repeat_message(numbers)}. "
+        f"another far beyond chance; first, batch {first}: "
+        f"{rows_repeat_message(numbers, by_features)}. "
         "Each batch's shift test and interval count every row as an independent draw; rows "
         "resampled with replacement from a pool, or copied records, are not, and those "
         "intervals are then too narrow (they can miss the share with no other warning). "
