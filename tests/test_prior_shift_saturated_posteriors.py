@@ -102,6 +102,7 @@ def test_copies_still_found_with_ties_of_a_forest():
         psw = PriorShiftWrapper(FrozenEstimator(model), random_state=0).fit(X.iloc[B], y[B])
     rows = X.iloc[C[:120]]
     copied = pd.concat([rows] * 3, ignore_index=True)
+    assert len(copied.drop_duplicates()) == 120  # pandas' own count of the distinct rows
     for Xu in (copied, copied.to_numpy()):
         found = repeats_warned(psw, Xu)
         assert len(found) == 1
