@@ -715,6 +715,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                                           self.random_state, "PriorShiftWrapper.fit")
         cal.output_map_ = self.output_map_
 
+    def _unlabelled_row_codes(self, X: Any) -> np.ndarray | None:
+        """:func:`_row_identity_codes` of rows to judge, where the labelled rows' were read at
+        ``fit`` (None otherwise: the rows are then grouped by their posteriors alone)."""
+        if self._repeat_reference(by_rows=True) is None:
+            return None
+        return _row_identity_codes(X)
+
     def _repeat_counts(self, X: Any, est: PriorEstimator, n_folds: int) -> tuple | None:
         """How often pairs of labelled rows (by their classes) have identical posteriors from
         the model that scores the ``adapt`` rows
@@ -1099,7 +1106,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 # interval and the shift test count them as independent (RepeatedRowsWarning);
                 # rows in memory are grouped by their features as well (since 5 December 2026)
                 self._warn_repeats(proba, folds, sample_weight,
-                                   row_codes=_row_identity_codes(X))
+                                   row_codes=self._unlabelled_row_codes(X))
         poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
             self.interval == "score" and not multiclass
         )
@@ -1502,7 +1509,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 # each batch's rows repeating one another beyond chance, as adapt judges its
                 # rows (RepeatedRowsWarning; since 5 December 2026)
                 self._warn_batch_repeats(table, proba, batches, batch_size, sample_weight,
-                                         folds, _row_identity_codes(X))
+                                         folds, self._unlabelled_row_codes(X))
         else:
             # Fitted on Dask input: the labelled rows are a tally, so each batch's interval is
             # a Poisson bootstrap over the tally's replicates and the batch's rows.
