@@ -131,3 +131,27 @@ def test_rare_class_batches_no_false_conflict():
         new_cover += lo <= 0.02 <= hi
     assert old_conflicts >= 2 and old_cover <= 16  # before
     assert new_conflicts == 0 and new_cover >= 19
+
+
+def test_few_labelled_rows_keep_the_rows_own_variance():
+    # statsmodels' spector (32 students): with only 16 labelled rows their second moment is too
+    # noisy to stand in for the batch's (benchmarks/prior_strong_evidence.py's spector cells
+    # covered 8 and 9 of 10 with it, 10 and 10 without), so below 100 effective labelled rows
+    # the interval is the rows' own-variance one; the same rows tiled to 112 labelled rows
+    # (same shares and posteriors) take the variance under the tested prior again
+    sm = pytest.importorskip("statsmodels.api")
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.model_selection import cross_val_predict
+
+    data = sm.datasets.spector.load_pandas().data
+    X, y = data[["GPA", "TUCE", "PSI"]].to_numpy(float), data["GRADE"].to_numpy(int)
+    p = cross_val_predict(LogisticRegression(max_iter=1000), X, y, cv=4, method="predict_proba")
+    lab, unl = np.arange(0, 32, 2), np.arange(1, 32, 2)
+    src = np.bincount(y[lab], minlength=2) / lab.size
+    got, _ = score_interval(p[unl], p[lab], y[lab], src)
+    own, _ = score_interval(p[unl], p[lab], y[lab], src, null_variance_below=0)
+    np.testing.assert_allclose(got, own, rtol=0, atol=1e-12)
+    tiled = np.tile(lab, 7)
+    many, _ = score_interval(p[unl], p[tiled], y[tiled], src)
+    many_own, _ = score_interval(p[unl], p[tiled], y[tiled], src, null_variance_below=0)
+    assert np.max(np.abs(many - many_own)) > 1e-3
