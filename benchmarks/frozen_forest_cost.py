@@ -27,7 +27,8 @@ beside (``sk_tuned``); lifelines, pingouin and scikit-survival are needed there.
 
 Run: ``nice python benchmarks/frozen_forest_cost.py h23|h22|anchor|newer|old SEEDS CSV
 [--sets a,b] [--models rf] [--modes frozen] [--sizes 150] [--first K]``; ``... summary CSV``
-prints the summary of a saved run. docs/small_data.md, "Tuned cost for frozen
+prints the summary of a saved run; ``... rules40 CSV [CSV ...]`` scores the 40-row rules of
+``rules40`` on saved runs. docs/small_data.md, "Tuned cost for frozen
 forests (session 24)".
 """
 
@@ -58,8 +59,8 @@ _SEEN: dict = {}
 _ORIGINAL = R.recalibrated_plugin_cutoff
 
 
-def _recording(p, y, w, t0, random_state):
-    out = _ORIGINAL(p, y, w, t0, random_state)
+def _recording(p, y, w, t0, random_state, **kw):
+    out = _ORIGINAL(p, y, w, t0, random_state, **kw)
     _SEEN.update(p=np.array(p), y=np.array(y), w=np.array(w), lib=out, t0=t0)
     return out
 
@@ -313,8 +314,39 @@ def summary(df: pd.DataFrame) -> None:
         print(f"{name:14s} n={len(g):4d} " + "  ".join(parts))
 
 
+def rules40(paths: list[str]) -> None:
+    """Three rules for 40-row coarse scores, scored on saved runs (no refit): the cutoff of
+    ``pp_coarse`` (the probability-scale sigmoid's anchor, settled) in place of the library's
+    where the held-out probabilities are coarse and there are at most 40 rows (``A``), and only
+    where the library's anchor was the model's own probabilities or no map (``B``), or only
+    there and where that sigmoid flags every held-out row (anchor below 0, ``E``). Prints, per
+    run, the geometric mean of cost over the sigmoid at the plug-in cutoff | the worst cell
+    (draws; for newer/old runs cells of mean cost), with the number of draws changed.
+    docs/small_data.md, "40-row frozen forests (session 24, third wave)"."""
+    for path in paths:
+        d = pd.read_csv(path)
+        small = d.coarse.astype(bool) & (d.n <= 40)
+        own_map = d.lib_map.isna() | (d.lib_map == "identity")
+        rules = {"A": small, "B": small & own_map, "E": small & own_map & (d.pp_anchor < 0)}
+        for k, m in rules.items():
+            d[k] = np.where(m, d.pp_coarse, d.lib)
+        if "c_fn" in d:
+            g = d.groupby(["set", "model", "n", "c_fn"])[["lib", "sig", *rules]].mean()
+        else:
+            g = d
+        g = g.dropna(subset=["sig"])
+        parts = []
+        for k in ("lib", *rules):
+            r = (g[k] + 1e-3) / (g.sig + 1e-3)
+            changed = "" if k == "lib" else f"({int(rules[k].sum())})"
+            parts.append(f"{k}{changed} {_gm(r):.4f}|{r.max():.2f}")
+        print(f"{Path(path).stem:16s} cells {len(g):4d}  " + "  ".join(parts))
+
+
 if __name__ == "__main__":
-    if sys.argv[1:2] == ["summary"]:
+    if sys.argv[1:2] == ["rules40"]:
+        rules40(sys.argv[2:])
+    elif sys.argv[1:2] == ["summary"]:
         d = pd.read_csv(sys.argv[2])
         summary_newer(d) if "c_fn" in d else summary(d)
     else:
