@@ -24,6 +24,7 @@ from ._prior_shift_tallied import _tally_rows, tallied_adapt, tallied_monitor
 from ._validation import check_sample_weight, plain
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
 from .shift._estimator import CALIBRATIONS, IMPRECISE_REACH, PRIOR_METHODS
+from .shift._repeats import ml_shares
 from .shift._shift_tests import evidence_cutoff
 
 #: Fewer labelled rows of a class than this makes ``fit`` warn (see ``_warn_few_class_rows``).
@@ -967,8 +968,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             identical posteriors otherwise) far more often than independent draws of the
             labelled classes do, a
             :class:`~probwrap.shift.RepeatedRowsWarning` says so (since 4 December 2026; for
-            at most 20,000 Dask or Spark rows too since 5 December 2026, not beyond), and
-            cells grouping the identical rows count each group once.
+            Dask or Spark rows too since 5 December 2026, of any number and grouped by their
+            features where they live since that day's session 25), and cells grouping the
+            identical rows count each group once.
 
         Returns
         -------
@@ -1021,11 +1023,17 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             from .scale._entry import estimate_multiclass_target
 
             scorer = self._fold_scorer()
-            # (a small set's rows come to the client: their repeats are judged as in memory,
-            # RepeatedRowsWarning; more rows are not, docs/scale.md)
+            came: list = []  # (a small set's rows come to the client: their ML shares)
             res = estimate_multiclass_target(
                 est, self.estimator_, X, sample_weight, rs, folds=scorer, cells=cells,
-                check_rows=None if cells is not None else self._warn_repeats_distributed)
+                check_rows=None if cells is not None else (
+                    lambda p, f, w: came.append((p, w))))
+            if cells is None:
+                # the rows' repeats, counted where they live whatever their number
+                # (RepeatedRowsWarning; beyond 20,000 rows since 5 December 2026, session 25)
+                ml = (ml_shares(est, *came[0]) if came else
+                      res.ml_prior if res.ml_prior is not None else res.prior)
+                self._warn_repeats_where_rows_live(X, sample_weight, ml, stacklevel=3)
             # (the fold models scored the rows where they live whenever there are any, and
             # every interval computed here reads them: a small set's in-memory estimate with
             # fold_proba, any interval; more rows, EM's class-moment interval; no warning)
@@ -1037,6 +1045,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # alongside.
             from .scale._entry import owner_resolution, unlabelled_proba_from_dask
 
+            given_weight = sample_weight
             # a refit base model: the fold models score a small set's rows where they live (a
             # larger set comes back as a tally of the refit model's score, without them)
             proba, sample_weight, target, folds = unlabelled_proba_from_dask(
@@ -1051,11 +1060,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 fold_replicates=0 if self.interval == "score" else int(est.n_resamples),
                 cells=cells is not None,
             )
-            if target is None and cells is None:
-                # a small set came back as rows (with the fold models' posteriors): its repeats
-                # are judged as in memory (since 5 December 2026); more rows come back as a
-                # tally, whose bins keep no identical rows (docs/scale.md)
-                self._warn_repeats(proba, folds, sample_weight)
+            if cells is None:
+                # the rows' repeats, counted where they live by their features (where the
+                # labelled rows' were read at fit) or posteriors, whatever their number (since
+                # 5 December 2026, session 25; before, only a small set whose rows came to the
+                # client, by posteriors); the ML shares of the rows, or of a larger set's tally
+                self._warn_repeats_where_rows_live(
+                    X, given_weight, ml_shares(est, proba, sample_weight),
+                    n_rows=proba.shape[0] if target is None else target.n_rows)
         else:
             proba = self._inner_output(X, "predict_proba")
             if sample_weight is not None:
@@ -1089,10 +1101,33 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             interval = res.interval
         return self._finish_adapt(res, interval)
 
-    def _warn_repeats_distributed(self, proba: np.ndarray, folds: Any,
-                                  sample_weight: Any) -> None:
-        """:meth:`_warn_repeats` from inside the scale layer (one frame deeper)."""
-        self._warn_repeats(proba, folds, sample_weight, stacklevel=6)
+    def _warn_repeats_where_rows_live(self, X: Any, sample_weight: Any, ml: np.ndarray,
+                                      n_rows: int | None = None, stacklevel: int = 3) -> None:
+        """:meth:`_warn_repeats` on Dask or Spark rows of any number: each row keyed where it
+        lives by its features (where the labelled rows' features were read at ``fit``, as in
+        memory) or else by its posteriors from the model and every fold model, the keys added
+        up by the engine (a shuffle; :func:`probwrap.scale._entry.unlabelled_repeat_tallies`),
+        five numbers to the client, judged by the rule of rows in memory
+        (:func:`probwrap.shift._repeats.judge_repeats`) with ``ml`` the rows' ML shares (of a
+        set beyond 20,000 rows, from its tally's bins). One more pass over the rows (it does
+        not score them when keyed by features). Nothing where the labelled rows were not kept
+        as rows."""
+        from .scale._entry import unlabelled_repeat_tallies
+        from .shift._repeats import judge_repeats
+
+        est = self.prior_estimator_
+        reference = self._repeat_reference(by_rows=True)
+        by_features = reference is not None
+        if not by_features:
+            reference = self._repeat_reference()
+        if reference is None or est.n_resamples == 0:
+            return
+        tallies = unlabelled_repeat_tallies(X, sample_weight, self.estimator_,
+                                            self._fold_scorer(), self.classes_.shape[0],
+                                            by_features, n_rows=n_rows)
+        found = judge_repeats(est, reference, np.asarray(ml, dtype=float), tallies)
+        if found is not None:
+            self._repeats_warning(found, by_features, stacklevel + 1)
 
     def _warn_repeats(self, proba: np.ndarray, folds: Any, sample_weight: Any,
                       stacklevel: int = 3, row_codes: np.ndarray | None = None) -> None:
@@ -1115,8 +1150,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         or 1 gives distinct rows the same posteriors (R's Ecdat Housing, Gaussian naive Bayes:
         12 of 179 distinct unlabelled rows at exactly 0 against 4 of 182 labelled rows, and the
         warning said that 11 rows repeated another; benchmarks/shift_real_hunt24.py). Dask and
-        Spark rows (``_warn_repeats_distributed``) are grouped by their posteriors alone."""
-        from .shift._repeats import RepeatedRowsWarning, repeats_of_rows, rows_repeat_message
+        Spark rows: :meth:`_warn_repeats_where_rows_live`."""
+        from .shift._repeats import repeats_of_rows
 
         reference = self._repeat_reference(by_rows=True)
         if row_codes is None or reference is None or (
@@ -1124,9 +1159,17 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             reference, row_codes = self._repeat_reference(), None
         found = repeats_of_rows(self.prior_estimator_, reference, proba, folds,
                                 sample_weight, row_codes=row_codes)
-        if found is None:
-            return
-        words = rows_repeat_message(found, by_features=row_codes is not None)
+        if found is not None:
+            self._repeats_warning(found, row_codes is not None, stacklevel + 1)
+
+    @staticmethod
+    def _repeats_warning(found: tuple, by_features: bool, stacklevel: int) -> None:
+        """``adapt``'s :class:`~probwrap.shift.RepeatedRowsWarning` for the numbers of
+        :func:`probwrap.shift._repeats.judge_repeats` (rows grouped by their features too:
+        ``by_features``)."""
+        from .shift._repeats import RepeatedRowsWarning, rows_repeat_message
+
+        words = rows_repeat_message(found, by_features=by_features)
         warnings.warn(
             f"adapt: {words}. The shift test and target_prior_interval_ "
             "count every "
@@ -1487,7 +1530,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         """``monitor``'s :class:`~probwrap.shift.RepeatedRowsWarning` (rows in memory): once,
         naming the batches whose rows repeat one another beyond chance, each batch judged by
         the rule ``adapt`` applies to its rows (:func:`probwrap.shift._repeats.repeats_of_rows`;
-        Dask workers and Spark executors apply it to their batches alike, by posteriors alone).
+        Dask workers and Spark executors apply it to their batches alike, by features too).
         With ``row_codes`` (:func:`_row_identity_codes` of the rows) and the labelled rows'
         read at ``fit``, rows are identical only where their features agree too, as in
         ``adapt``. Nothing where the labelled rows were not kept as rows."""

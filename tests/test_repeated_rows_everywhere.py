@@ -86,16 +86,13 @@ def _repeats(fn):
     return [str(w.message) for w in caught if issubclass(w.category, RepeatedRowsWarning)]
 
 
-def _by_posteriors(messages):
-    """Memory's words as Dask's: rows in memory are grouped by their features as well as their
-    posteriors, Dask rows by their posteriors alone (since 5 December 2026); where no two
-    distinct rows share posteriors (these five continuous columns) the numbers agree and the
-    words differ by that phrase only."""
-    out = []
+def _same_words(messages):
+    """Memory's words, which Dask and Spark now give too: their rows are grouped by their
+    features as well as their posteriors where they live (since 5 December 2026, session 25;
+    before, by their posteriors alone, and the words said 'the same posteriors')."""
     for m in messages:
         assert "(the same features and posteriors; " in m
-        out.append(m.replace("(the same features and posteriors; ", "(the same posteriors; "))
-    return out
+    return messages
 
 
 @pytest.mark.parametrize("kind", ["frozen", "refit"])
@@ -107,7 +104,7 @@ def test_dask_adapt_warns_exactly_when_memory_does(cancer, kind):
         rows = X[b]
         mem = _repeats(lambda r=rows: copy.deepcopy(psw).adapt(r))
         dist = _repeats(lambda r=rows: copy.deepcopy(psw).adapt(da.from_array(r, chunks=40)))
-        assert dist == _by_posteriors(mem)  # the same message, numbers and all
+        assert dist == _same_words(mem)  # the same message, numbers and all
         decided.append(bool(mem))
     # the small pools warn (design effect about 1 + 60 / 20 and 1 + 60 / 40), the rows drawn
     # without replacement do not, nor (this draw) the pool of 240, whose rows repeat but about
@@ -133,7 +130,7 @@ def test_multiclass_dask_adapt_warns_as_in_memory():
         mem = _repeats(lambda r=rows: copy.deepcopy(psw).adapt(r))
         dist = _repeats(lambda r=rows: copy.deepcopy(psw).adapt(da.from_array(r, chunks=25)))
         assert bool(mem) is expected
-        assert dist == _by_posteriors(mem)
+        assert dist == _same_words(mem)
 
 
 @pytest.mark.parametrize("kind", ["frozen", "refit"])
@@ -147,7 +144,7 @@ def test_monitor_names_the_batches_adapt_warns_for(cancer, kind):
     assert 0 in flagged and len(flagged) < len(draws)
     mem = _repeats(lambda: psw.monitor(rows, batch_size=BATCH))
     dist = _repeats(lambda: psw.monitor(da.from_array(rows, chunks=BATCH)))
-    assert len(mem) == 1 and dist == _by_posteriors(mem)  # before: no warning from either
+    assert len(mem) == 1 and dist == _same_words(mem)  # before: no warning from either
     names = ", ".join(map(str, flagged))
     assert mem[0].startswith(f"monitor: in {len(flagged)} of {len(draws)} batches (batch {names})")
     # the first batch's numbers are adapt's on its rows

@@ -70,16 +70,13 @@ def _repeats(fn):
     return out, [str(w.message) for w in caught if issubclass(w.category, RepeatedRowsWarning)]
 
 
-def _by_posteriors(messages):
-    """Memory's words as Dask's: rows in memory are grouped by their features as well as their
-    posteriors, Dask rows by their posteriors alone (since 5 December 2026); where no two
-    distinct rows share posteriors (these five continuous columns) the numbers agree and the
-    words differ by that phrase only."""
-    out = []
+def _same_words(messages):
+    """Memory's words, which Dask and Spark now give too: their rows are grouped by their
+    features as well as their posteriors where they live (since 5 December 2026, session 25;
+    before, by their posteriors alone, and the words said 'the same posteriors')."""
     for m in messages:
         assert "(the same features and posteriors; " in m
-        out.append(m.replace("(the same features and posteriors; ", "(the same posteriors; "))
-    return out
+    return messages
 
 
 def _frame(spark, rows, **extra):
@@ -95,7 +92,7 @@ def test_spark_adapt_warns_exactly_when_memory_does(spark, cancer):
     for b in _draws(X.shape[0], seed=1):
         _, mem = _repeats(lambda b=b: copy.deepcopy(psw).adapt(X[b]))
         _, dist = _repeats(lambda b=b: copy.deepcopy(psw).adapt(_frame(spark, X[b])))
-        assert dist == _by_posteriors(mem)  # the same message, numbers and all
+        assert dist == _same_words(mem)  # the same message, numbers and all
         decided.append(bool(mem))
     assert decided == [True, True, False, False]  # before: the Spark adapt never warned
 
@@ -110,9 +107,40 @@ def test_spark_monitor_warns_and_has_the_rows_alone_fields_of_memory(spark, canc
     p = psw.estimator_.predict_proba(rows)
     order = np.lexsort((p[:, 1], p[:, 0], batch))
     mem, mem_warned = _repeats(lambda: psw.monitor(rows[order], batches=batch[order]))
-    assert len(mem_warned) == 1 and dist_warned == _by_posteriors(mem_warned)  # before: none
+    assert len(mem_warned) == 1 and dist_warned == _same_words(mem_warned)  # before: none
     assert mem_warned[0].startswith("monitor: in 3 of 4 batches (batch 0, 1, 2)")
     assert dist.dtype.names == mem.dtype.names  # before: no ml_prior, no pseudo_rows
     np.testing.assert_allclose(dist["ml_prior"], mem["ml_prior"], rtol=1e-10, atol=1e-12)
     np.testing.assert_allclose(dist["pseudo_rows"], mem["pseudo_rows"], rtol=1e-10, atol=1e-12)
     assert np.all(mem["pseudo_rows"] > 0)
+
+
+def test_spark_adapt_beyond_kept_rows_judges_every_row(spark, cancer, tally_path):
+    """Beyond KEPT_ROWS (forced to 0: the rows come back as a tally of binned scores) the
+    Spark adapt keys every row by its features on the executors and adds the keys up with one
+    groupBy (probwrap.scale._repeat_keys): rows drawn with replacement from a pool of 20 warn
+    with memory's counts and observed design effect (the chance bound within 2 %: the ML
+    shares of the tally's bins), weighted or not; rows drawn without replacement from neither.
+    Before 5 December 2026 (session 25) a Spark set beyond 20,000 rows was not judged."""
+    import re
+
+    X, psw = cancer
+    rng = np.random.default_rng(11)
+    pooled, distinct = X[rng.choice(np.arange(20), 150)], X[rng.permutation(X.shape[0])[:150]]
+    w = rng.uniform(0.5, 2.0, 150)
+    number = r"([0-9.e+-]+)"
+    for rows, weight, warned in ((pooled, None, True), (pooled, w, True),
+                                 (distinct, None, False)):
+        _, mem = _repeats(lambda r=rows, ww=weight: copy.deepcopy(psw).adapt(
+            r, sample_weight=ww))
+        extra = {} if weight is None else {"w": weight}
+        _, dist = _repeats(lambda r=rows, ww=weight, e=extra: copy.deepcopy(psw).adapt(
+            _frame(spark, r, **e), sample_weight=None if ww is None else "w"))
+        assert bool(mem) is warned and len(dist) == len(mem)
+        for d, m in zip(dist, mem, strict=True):
+            head = m.split(", a design effect of ")[0]
+            assert d.startswith(head)  # the counts, by features and posteriors
+            pick = rf"design effect of {number} where .* at most {number} "
+            (d_obs, d_exp), (m_obs, m_exp) = (re.search(pick, t).groups() for t in (d, m))
+            assert d_obs == m_obs
+            assert float(d_exp) == pytest.approx(float(m_exp), rel=0.02)

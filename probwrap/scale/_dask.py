@@ -180,6 +180,14 @@ class DaskRows:
     def apply_first(self, fn: Any, *args: Any) -> Any:
         return self._dask.delayed(fn, pure=True)(self._blocks[0], *args).compute()
 
+    def key_tallies(self, fn: Any, *args: Any, n_rows: int | None = None) -> tuple:
+        """The rows grouped by the keys ``fn(*args, Xb, wb)`` gives each block's rows, added up
+        by a shuffle of the keys between tasks (unlabelled rows;
+        :func:`probwrap.scale._repeat_keys.dask_key_tallies`)."""
+        from ._repeat_keys import dask_key_tallies
+
+        return dask_key_tallies(self._dask, self._pieces, fn, args, n_rows)
+
     def shared(self, value: Any) -> Any:
         """``value`` (models) as one object of the task graph, for the arguments of
         ``map_reduce`` / ``persist``: every block's task reads it, and it reaches each worker
@@ -453,8 +461,30 @@ def _monitor_block(shared, seed, Xb, wb):
         return None
     proba = predict_block(estimator, "predict_proba", Xb, est.n_classes_)
     fold_proba = None if folds is None else list(folds.fold_proba(Xb))
+    counts, codes = batch_repeat_reference(counts, Xb)
     return monitor_proba(est, source, seed, proba, check_sample_weight(wb, proba.shape[0]),
-                         fold_proba, counts)
+                         fold_proba, counts, codes)
+
+
+def batch_repeat_reference(counts: Any, Xb: Any) -> tuple:
+    """``(labelled repeat counts, feature codes of the batch's rows or None)`` for one
+    ``monitor`` batch on a worker or executor: ``counts`` is ``(counts by features and
+    posteriors or None, counts by posteriors or None)``
+    (``PriorShiftWrapper._repeat_reference(by_rows=True)`` and ``()``); with the first, the
+    batch's rows are grouped by their features too, as in memory (since 5 December 2026,
+    session 25; before, by their posteriors alone)."""
+    from ..shift._repeats import row_key_pairs
+
+    if counts is None:
+        return None, None
+    by_rows, plain_counts = counts
+    if by_rows is not None:
+        keys = row_key_pairs(Xb)
+        if keys is not None:
+            codes = np.unique(np.ascontiguousarray(keys).view(np.dtype((np.void, 16))).ravel(),
+                              return_inverse=True)[1].ravel().astype(float)
+            return by_rows, codes
+    return plain_counts, None
 
 
 #: One batch's estimate at a time per process records its warnings (``warnings.catch_warnings``
@@ -462,7 +492,7 @@ def _monitor_block(shared, seed, Xb, wb):
 _RECORDING = threading.Lock()
 
 
-def monitor_proba(est, source, seed, proba, w, fold_proba=None, counts=None):
+def monitor_proba(est, source, seed, proba, w, fold_proba=None, counts=None, row_codes=None):
     """One row of a monitor table from a batch's probabilities and weights (Dask or Spark),
     the power of two the batch's weights were divided by (1.0 unless they lie beyond about
     1e+-77, whose sums of squares would overflow or underflow; a batch's estimate does not
@@ -476,13 +506,15 @@ def monitor_proba(est, source, seed, proba, w, fold_proba=None, counts=None):
     None: not kept as rows): the fourth entry returned is then the batch's
     :func:`probwrap.shift._repeats.repeats_of_rows` (None where its rows do not repeat beyond
     chance), judged on the batch's rows as ``monitor`` judges a batch in memory; the client
-    raises one :class:`~probwrap.shift.RepeatedRowsWarning` for the table."""
+    raises one :class:`~probwrap.shift.RepeatedRowsWarning` for the table. ``row_codes``:
+    codes of the batch's features (:func:`batch_repeat_reference`), with ``counts`` read by
+    features too."""
     from ..shift._repeats import repeats_of_rows
 
     with _RECORDING, warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         row, unit = _monitor_row(est, source, seed, proba, w, fold_proba)
-        repeats = repeats_of_rows(est, counts, proba, fold_proba, w)
+        repeats = repeats_of_rows(est, counts, proba, fold_proba, w, row_codes=row_codes)
     return row, unit, [(c.category, str(c.message)) for c in caught], repeats
 
 
@@ -584,7 +616,7 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
     # with every block's task (a refit base model brings its fold models along)
     shared = dask.delayed(
         (owner.estimator_, est, source, owner._fold_scorer(),
-         owner._repeat_reference()),
+         (owner._repeat_reference(by_rows=True), owner._repeat_reference())),
         pure=True, traverse=False,
     )
     call = dask.delayed(_monitor_block, pure=True)
@@ -621,7 +653,8 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
         table[j] = (i, *r)
     warn_monitor_units([u for _, (_, u, _, _) in kept])
     warn_monitor_batches([(i, caught) for i, (_, _, caught, _) in kept], len(kept))
-    warn_batch_repeats([(i, found) for i, (_, _, _, found) in kept], len(kept))
+    warn_batch_repeats([(i, found) for i, (_, _, _, found) in kept], len(kept),
+                       by_features=owner._repeat_reference(by_rows=True) is not None)
     return table
 
 

@@ -19,6 +19,7 @@ from . import _dask, _multiclass, _multiclass_wrappers, _rows
 from ._bootstrap import tally_cutoff_interval, tally_exact_interval, tally_prior_interval
 from ._build import tally_scores
 from ._dask import owner_resolution, warn_batch_repeats
+from ._rows import rows_of
 from ._tally import _check_resolution as check_resolution
 from ._tally import replicate_seed
 
@@ -40,6 +41,7 @@ __all__ = [
     "tally_prior_interval",
     "tally_scores",
     "unlabelled_proba_from_dask",
+    "unlabelled_repeat_tallies",
     "warn_batch_repeats",
 ]
 
@@ -60,6 +62,21 @@ def unlabelled_proba_from_dask(estimator: Any, X: Any, sample_weight: Any = None
     models' posteriors of the same rows (a small set) or, with ``moments_of``, the sums of their
     fold-averaged score on a grid of priors (more rows): ``(proba, weights, tally, folds)``."""
     return _rows.unlabelled_proba_from_rows(estimator, X, sample_weight, **kwargs)
+
+
+def unlabelled_repeat_tallies(X: Any, sample_weight: Any, estimator: Any, scorer: Any,
+                              n_classes: int, by_features: bool,
+                              n_rows: int | None = None) -> tuple:
+    """:func:`probwrap.shift._repeats.repeat_tallies` of unlabelled Dask or Spark rows, grouped
+    where they live by their features (``by_features``) or by the posteriors of ``estimator``
+    (and of ``scorer``'s fold models, a base model refit on the labelled rows): five numbers
+    come back, whatever the number of rows (:mod:`probwrap.scale._repeat_keys`)."""
+    from ._repeat_keys import key_block
+
+    rows = rows_of(X, None, sample_weight, estimator)
+    return rows.key_tallies(key_block, rows.shared(estimator),
+                            None if scorer is None else rows.shared(scorer), int(n_classes),
+                            bool(by_features), n_rows=n_rows)
 
 
 def spark_cells_rows(estimator: Any, X: Any, sample_weight: Any, cells: str, folds: Any,

@@ -803,12 +803,50 @@ class SparkRows:
         executors as one broadcast variable (the twin of ``DaskRows.shared``)."""
         return value
 
+    def key_tallies(self, fn: Any, *args: Any, n_rows: int | None = None) -> tuple:
+        """The rows grouped by the keys ``fn(*args, Xb, wb)`` gives each chunk's rows, added up
+        by Spark (unlabelled rows; :func:`probwrap.scale._repeat_keys.spark_key_tallies`;
+        ``n_rows`` is not needed)."""
+        return spark_key_tallies(self._frame, self._columns, self._split, fn, args)
+
     def apply_first(self, fn: Any, *args: Any) -> Any:
         features, named, _, _ = self._split
         pdf = self._frame.select(*features).limit(1000).toPandas()
         if len(pdf) == 0:
             raise ValueError("The Spark DataFrame has no rows; at least one row is needed.")
         return fn(_features(pdf, features, named), *args)
+
+
+def spark_key_tallies(frame: Any, columns: list, split_spec: tuple, fn: Any, args: tuple
+                      ) -> tuple[int, int, float, float, float]:
+    """Repeated rows (``RepeatedRowsWarning``): :func:`probwrap.shift._repeats.repeat_tallies`
+    of the rows of a Spark DataFrame, keyed by
+    ``fn(*args, Xb, wb)`` on the executors (chunks of each partition) and added up by one
+    ``groupBy`` of the keys and one aggregate: five numbers reach the driver."""
+    import pandas as pd
+    from pyspark.sql import functions as F
+
+    shared = _broadcast(frame, (fn, args))
+
+    def keyed(batches):
+        f, a = shared.value
+        for pdf in _chunks(batches, CHUNK_ROWS):
+            keys, w = f(*a, *_split(*split_spec, pdf))
+            signed = np.ascontiguousarray(keys).view(np.int64)
+            yield pd.DataFrame({"k0": signed[:, 0], "k1": signed[:, 1], "w": w})
+
+    keyed_rows = frame.select(*columns).mapInPandas(keyed, "k0 long, k1 long, w double")
+    groups = keyed_rows.groupBy("k0", "k1").agg(
+        F.sum("w").alias("gw"), F.sum(F.col("w") * F.col("w")).alias("gq"),
+        F.count(F.lit(1)).alias("gn"))
+    row = groups.agg(
+        F.count(F.lit(1)).alias("groups"), F.sum("gn").alias("rows"),
+        F.sum(F.col("gw") * F.col("gw")).alias("group_sq"), F.sum("gw").alias("total"),
+        F.sum("gq").alias("sq")).collect()[0]
+    if row["rows"] is None:
+        return 0, 0, 0.0, 0.0, 0.0
+    return (int(row["rows"]), int(row["groups"]), float(row["group_sq"]), float(row["total"]),
+            float(row["sq"]))
 
 
 # -- the wrappers' Spark path --------------------------------------------------------------------
@@ -861,7 +899,8 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
     source = getattr(owner, "_source_tally", None)
     # one broadcast: the model (with a refit base model's fold models), the estimator, seeds
     shared = _broadcast(X, (owner.estimator_, est, source, seeds, owner._fold_scorer(),
-                            owner._repeat_reference()))
+                            (owner._repeat_reference(by_rows=True),
+                             owner._repeat_reference())))
     batch_type = X.schema[batch_col].dataType
     schema = T.StructType([
         T.StructField("batch", batch_type),
@@ -908,7 +947,7 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         import pandas as pd
 
         from .._validation import check_sample_weight
-        from ._dask import monitor_proba
+        from ._dask import batch_repeat_reference, monitor_proba
 
         model, prior_est, src, seed_of, folds, counts = shared.value
         Xb = _features(pdf, features, named)
@@ -920,8 +959,10 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         order = np.lexsort((w, *proba.T[::-1]))  # by class-0 probability, ..., then weight
         # a refit base model: the batch's rows scored by every fold model too, in the same order
         fold_proba = None if folds is None else [f[order] for f in folds.fold_proba(Xb)]
+        counts, codes = batch_repeat_reference(counts, Xb)
         row, unit, caught, repeats = monitor_proba(prior_est, src, seed_of[key], proba[order],
-                                                   w[order], fold_proba, counts)
+                                                   w[order], fold_proba, counts,
+                                                   None if codes is None else codes[order])
         n, n_eff, prior, lower, upper, stat, pvalue, conv, by_class, ml, pseudo = row
         return pd.DataFrame({
             "batch": [key], "n_rows": [int(n)], "n_effective": [float(n_eff)],
@@ -977,7 +1018,7 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         len(labels),
     )
     warn_batch_repeats([(lab, _repeats(by_label[lab]["repeats"])) for lab in labels],
-                       len(labels))
+                       len(labels), by_features=owner._repeat_reference(by_rows=True) is not None)
     return table
 
 

@@ -32,7 +32,13 @@ only where their features agree as well: ``PriorShiftWrapper`` passes codes of t
 features as one more block, to the labelled counts and clumps at ``fit`` and to
 :func:`repeats_of_rows` (``row_codes``), since distinct rows share posteriors where a model
 saturates at exactly 0 or 1 or a tree's leaves tie them (since 5 December 2026). Dask and Spark
-rows, and scores read from files, are grouped by their posteriors alone.
+rows are grouped alike, where they live: every row gets a 128-bit key (:func:`row_key_pairs`)
+of its features (where the labelled rows' features were read at ``fit``; identical features
+give identical posteriors) or else of its posteriors, and the engine counts the rows and sums
+the weights of each key by a shuffle (:func:`key_tallies` on each share of the keys), so only
+five numbers per share reach the client and every set is judged, not only sets of at most
+20,000 rows (since 5 December 2026, session 25). Scores read from files are grouped by their
+scores alone (they are all the file gives).
 """
 
 from __future__ import annotations
@@ -42,6 +48,11 @@ import numpy as np
 __all__ = [
     "REPEAT_EXCESS",
     "RepeatedRowsWarning",
+    "judge_repeats",
+    "key_tallies",
+    "ml_shares",
+    "repeat_tallies",
+    "row_key_pairs",
     "batch_repeats_message",
     "repeats_of_rows",
     "rows_repeat_message",
@@ -68,19 +79,24 @@ class RepeatedRowsWarning(UserWarning):
     labelled rows at ``fit`` and the rows judged) are identical where their features and their
     posteriors agree exactly (since 5 December 2026: a model whose posteriors saturate at
     exactly 0 or 1, or a tree's leaves, give distinct rows the same posteriors, and a forest's
-    tied vote shares hid copied rows); Dask and Spark rows, other inputs (sparse matrices,
-    object arrays) and scores read from files (``probwrap prevalence --reference``) are
-    grouped by their posteriors alone, the labelled rows' rate of coincidences read alike.
+    tied vote shares hid copied rows); Dask and Spark rows alike, by a key of their features
+    where they live, where the labelled rows were so read (since 5 December 2026, session 25).
+    Other inputs (sparse matrices, object arrays, labelled rows fitted from Dask or Spark) and
+    scores read from files (``probwrap prevalence --reference``) are grouped by their
+    posteriors alone, the labelled rows' rate of coincidences read alike;
+    ``probwrap prevalence --source-prevalence`` without reference rows is not judged (nothing
+    tells how often independent scores coincide; docs/command_line.md).
 
-    Raised by ``PriorShiftWrapper.adapt`` (no ``cells`` given; rows in memory, or at most
-    20,000 Dask or Spark rows, whose rows come to the client) when the design effect of the
+    Raised by ``PriorShiftWrapper.adapt`` (no ``cells`` given; rows in memory, or Dask or
+    Spark rows of any number, counted where they live) when the design effect of the
     rows' exact repeats is more than ``REPEAT_EXCESS`` (1.25) times the largest one that
     independent draws give, read from how often labelled rows coincide
     (:mod:`probwrap.shift._repeats`), and by ``PriorShiftWrapper.monitor`` once per call,
     naming the batches whose rows do so (each batch judged by the same rule, in memory, on a
-    Dask worker or a Spark executor; since 5 December 2026). Not judged: more than 20,000 Dask
-    or Spark rows at ``adapt`` (they come back as a tally of binned scores, which keeps no
-    identical rows; docs/scale.md), and labelled rows not kept as rows. Rows resampled with replacement from a pool, or copied
+    Dask worker or a Spark executor; since 5 December 2026). Not judged: labelled rows not
+    kept as rows (more than 20,000, or fitted from more than 20,000 Dask or Spark rows; before
+    session 25 of 5 December 2026 also ``adapt`` on more than 20,000 Dask or Spark rows).
+    Rows resampled with replacement from a pool, or copied
     records, carry the pool's own sampling error, which an interval counting every row as an
     independent draw leaves out: on R's AER PhDPublications and survival nwtco, batches of 400
     rows drawn with replacement from half of the rows held the truth in 90-93 % and 84-94 % of
@@ -198,7 +214,14 @@ def repeats_beyond_chance(observed: float, expected: float, codes: np.ndarray,
         return False
     w = np.ones(np.asarray(codes).shape[0]) if sample_weight is None else np.asarray(
         sample_weight, dtype=float)
-    n = float(w.sum() ** 2 / np.dot(w, w))
+    return _beyond_chance(observed, expected, float(w.sum() ** 2 / np.dot(w, w)), clump)
+
+
+def _beyond_chance(observed: float, expected: float, n: float,
+                   clump: tuple[float, float] | None) -> bool:
+    """:func:`repeats_beyond_chance` with Kish's count of the rows ``n`` given."""
+    if observed <= REPEAT_EXCESS * expected:
+        return False
     tied, chance = (observed - 1.0) * n / 2.0, (expected - 1.0) * n / 2.0
     var = chance
     if clump is not None:
@@ -267,34 +290,134 @@ def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_pro
     >>> repeats_of_rows(est, counts, proba[100:300]) is None   # no row repeats
     True
     """
-    import warnings
-
-    from ._estimate import em_prior
-
     p = np.asarray(proba, dtype=float)
     if counts is None or getattr(estimator, "n_resamples", 0) == 0 or p.shape[0] < 2:
         return None
     blocks = [*(fold_proba or []), *(() if row_codes is None else (row_codes,))]
     codes = identical_row_codes(p, *blocks)
-    groups = int(codes.max()) + 1
-    if groups == codes.shape[0]:
+    if int(codes.max()) + 1 == codes.shape[0]:
         return None  # no row repeats
+    return judge_repeats(estimator, counts, ml_shares(estimator, p, sample_weight),
+                         repeat_tallies(codes, sample_weight))
+
+
+def ml_shares(estimator, proba: np.ndarray, sample_weight: np.ndarray | None) -> np.ndarray:
+    """The rows' maximum-likelihood class shares (EM on the calibrated posteriors from the
+    source prior; warnings of the EM kept quiet): one of the two mixes whose rate of
+    coincidences :func:`judge_repeats` reads."""
+    import warnings
+
+    from ._estimate import em_prior
+
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        ml = em_prior(estimator.calibrate(p), estimator.source_prior_,
-                      sample_weight=sample_weight).prior
+        return np.asarray(em_prior(estimator.calibrate(np.asarray(proba, dtype=float)),
+                                   estimator.source_prior_, sample_weight=sample_weight).prior)
+
+
+def repeat_tallies(codes: np.ndarray, sample_weight: np.ndarray | None
+                   ) -> tuple[int, int, float, float, float]:
+    """What the check reads of rows grouped into identical ones (``codes``): ``(rows, groups,
+    sum_g W_g^2, sum_i w_i, sum_i w_i^2)``, ``W_g`` the weight of group ``g`` (unit weights
+    for None). Sums of such tuples over disjoint shares of the groups are the tuple of all
+    rows (how Dask and Spark rows are judged: :func:`key_tallies`)."""
+    c = np.asarray(codes, dtype=np.intp)
+    w = np.ones(c.shape[0]) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    group = np.bincount(c, weights=w) if c.size else np.zeros(0)
+    return (int(c.shape[0]), int(np.count_nonzero(np.bincount(c))) if c.size else 0,
+            float(np.dot(group, group)), float(w.sum()), float(np.dot(w, w)))
+
+
+def row_key_pairs(X) -> np.ndarray | None:
+    """A 128-bit key of every row, shape (n, 2) of uint64, equal where two rows agree exactly
+    (-0.0 and 0.0 alike): a pandas DataFrame or Series by pandas' row hash under two hash keys,
+    a NumPy array (or a SciPy sparse matrix, made dense: one block of rows) by two 64-bit
+    multiply-xorshift hashes of its values as float64 with different constants; None for
+    anything else. Two unequal rows share a key with a chance of about ``2**-128``; the keys are
+    the same wherever a row is hashed (a Dask worker, a Spark executor, the client), so rows
+    of different blocks group together.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> keys = row_key_pairs(np.array([[1.0, 2.0], [1.0, 2.0], [2.0, 1.0]]))
+    >>> keys.shape, bool((keys[0] == keys[1]).all()), bool((keys[0] == keys[2]).all())
+    ((3, 2), True, False)
+    """
+    if hasattr(X, "iloc") and not hasattr(X, "__dask_graph__"):
+        import pandas as pd
+
+        return np.column_stack([
+            pd.util.hash_pandas_object(X, index=False, hash_key=key).to_numpy(dtype=np.uint64)
+            for key in ("probwrap-rows-a1", "probwrap-rows-b2")])
+    if hasattr(X, "toarray") and hasattr(X, "shape"):
+        X = X.toarray()
+    if not isinstance(X, np.ndarray):
+        return None
+    if X.dtype.kind not in "biuf":
+        import pandas as pd
+
+        return row_key_pairs(pd.DataFrame(X.reshape(X.shape[0], -1)))
+    m = np.asarray(X, dtype=np.float64).reshape(X.shape[0], -1) + 0.0
+    bits = np.ascontiguousarray(m).view(np.uint64)
+    out = np.empty((m.shape[0], 2), dtype=np.uint64)
+    with np.errstate(over="ignore"):
+        for col, (offset, step) in enumerate(((0xCBF29CE484222325, 0x9E3779B97F4A7C15),
+                                              (0x84222325CBF29CE4, 0xC2B2AE3D27D4EB4F))):
+            mult = (np.arange(1, m.shape[1] + 1, dtype=np.uint64) * np.uint64(step)) | np.uint64(1)
+            acc = np.full(m.shape[0], np.uint64(offset))
+            for j in range(m.shape[1]):
+                acc = (acc ^ bits[:, j]) * mult[j]
+                acc ^= acc >> np.uint64(31 - 2 * col)
+            out[:, col] = acc
+    return out
+
+
+def _pair_groups(keys: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct keys (m, 2) and the weight of each (rows of one key summed)."""
+    k = np.ascontiguousarray(np.asarray(keys, dtype=np.uint64).reshape(-1, 2))
+    if k.shape[0] == 0:
+        return k, np.zeros(0)
+    uniq, inverse = np.unique(k.view(np.dtype((np.void, 16))).ravel(), return_inverse=True)
+    weight = np.bincount(inverse.ravel(), weights=w, minlength=uniq.shape[0])
+    return uniq.view(np.uint64).reshape(-1, 2), weight
+
+
+def key_tallies(keys: np.ndarray, group_weight: np.ndarray) -> tuple[int, float]:
+    """``(groups, sum_g W_g^2)`` of keyed groups given as pieces that may repeat a key (one
+    share of the keys from every block: the pieces of one key are added first); ``keys`` (m,
+    2) and the weight of each piece."""
+    k, w = _pair_groups(keys, np.asarray(group_weight, dtype=float))
+    return int(k.shape[0]), float(np.dot(w, w))
+
+
+def judge_repeats(estimator, counts: tuple | None, ml: np.ndarray,
+                  tallies: tuple) -> tuple[int, int, float, float] | None:
+    """The rule of :func:`repeats_of_rows` on rows already grouped: ``tallies`` =
+    :func:`repeat_tallies` (or their sums over shares of the keys, Dask and Spark), ``ml`` the
+    rows' maximum-likelihood shares (:func:`ml_shares`; of a tally's binned rows beyond 20,000
+    Dask or Spark rows). ``(rows, distinct rows, observed design effect, the largest one
+    independent draws give)`` where the rows repeat beyond chance, None otherwise (and where
+    the sums are not finite: weights beyond about 1e+-150)."""
+    rows, groups, group_sq, total, sq = tallies
+    if counts is None or getattr(estimator, "n_resamples", 0) == 0 or rows < 2:
+        return None
+    if groups >= rows or not (np.isfinite(group_sq) and np.isfinite(sq) and sq > 0):
+        return None
     tied, pairs = counts[0], counts[1]
     rate = max(collision_bound(tied, pairs, estimator.source_prior_),
                collision_bound(tied, pairs, ml))
-    observed, expected = excess_repeats(codes, sample_weight, rate)
+    observed = float(group_sq / sq)
+    n = float(total ** 2 / sq)
+    expected = float(1.0 + max(n - 1.0, 0.0) * max(rate, 0.0))
     clump = None
     if len(counts) >= 4:
         # the larger spread of the two mixes (how far the count of ties swings by chance)
         sums = [_clump_sums(counts[2:4], sh) for sh in (estimator.source_prior_, ml)]
         clump = max(sums, key=lambda qs: qs[1] - qs[0] ** 2)
-    if not repeats_beyond_chance(observed, expected, codes, sample_weight, clump):
+    if not _beyond_chance(observed, expected, n, clump):
         return None
-    return int(codes.shape[0]), groups, float(observed), float(expected)
+    return int(rows), int(groups), observed, expected
 
 
 def rows_repeat_message(found: tuple[int, int, float, float], by_features: bool = False) -> str:
