@@ -183,7 +183,8 @@ def _fit(args: argparse.Namespace) -> int:
                                                   else [])])
         scores = read_scores(frame, args.score_column, args.scores, scale=args.scale,
                              verb="calibrate")
-        given = read_weights(frame, args.weight_column, args.scores, "calibrate")
+        given = read_weights(frame, args.weight_column, args.scores, "calibrate",
+                             dots=getattr(args, "weight_dots", None))
         late = weights = None
         if late_columns is None:
             y, labels = read_labels(

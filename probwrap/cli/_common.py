@@ -23,7 +23,7 @@ __all__ = [
     "DataError", "MissingExtraError", "OPTIONAL_MODULES", "require", "shown", "clean",
     "TABLE_SUFFIXES", "table_kind", "one_line", "warn_line", "check_ranking", "check_row_count",
     "FEW_ROWS", "MIN_RESAMPLES", "add_positive_label_flag", "add_format_flag",
-    "add_resamples_flag", "whole_number", "add_seed_flag", "MAX_SEED", "add_weight_flag",
+    "add_resamples_flag", "whole_number", "add_seed_flag", "MAX_SEED", "add_weight_flag", "add_weight_dots_flag",
     "weight_summary", "not_a_number", "FREQUENCY_WEIGHT_LIMIT", "StandardStream",
     "is_standard_stream", "INPUT_OPTIONS", "NAMED_ROWS", "rows_text", "missing_count_text",
     "percent_hint",
@@ -350,11 +350,25 @@ def percent_hint(value: float) -> str:
 
 
 def add_weight_flag(parser: argparse.ArgumentParser) -> None:
-    """The ``--weight-column`` flag: row weights for every number a verb computes."""
+    """The ``--weight-column`` flag: row weights for every number a verb computes (and
+    ``--weight-dots``, :func:`add_weight_dots_flag`)."""
     parser.add_argument(
         "--weight-column", metavar="W", default=None,
         help="column of row weights: numbers >= 0, not all 0 (e.g. how many parcels a row "
         "stands for); every number is then weighted by them",
+    )
+    add_weight_dots_flag(parser)
+
+
+def add_weight_dots_flag(parser: argparse.ArgumentParser) -> None:
+    """``--weight-dots``: how a dot in weights is read where the file cannot tell."""
+    parser.add_argument(
+        "--weight-dots", choices=("decimal", "thousands"), default=None,
+        help="how a dot in the weights is read in a semicolon-separated file without decimal "
+        "commas, where 2.500 may be 2.5 or 2500 (European spreadsheets write whole numbers "
+        "with dots between thousands): decimal reads 2.5, thousands 2500; by default a weight "
+        "column whose dotted weights all have three digits after the dot, with nothing else "
+        "in it to settle it, is refused",
     )
 
 

@@ -405,7 +405,8 @@ def _run(args: argparse.Namespace) -> int:
                                                 *([args.weight_column] if args.weight_column
                                                   else [])])
         scores = read_scores(frame, args.score_column, args.scores, scale=args.scale, verb="cutoff")
-        given = read_weights(frame, args.weight_column, args.scores, "cutoff")
+        given = read_weights(frame, args.weight_column, args.scores, "cutoff",
+                             dots=getattr(args, "weight_dots", None))
         if late_columns is None:
             y, labels = read_labels(
                 frame, args.label_column, args.scores, positive=args.positive_label

@@ -42,6 +42,7 @@ from ._common import (
     add_positive_label_flag,
     add_resamples_flag,
     add_seed_flag,
+    add_weight_dots_flag,
     check_ranking,
     check_row_count,
     not_a_number,
@@ -356,7 +357,7 @@ def _run(args: argparse.Namespace) -> int:
                            + ([] if args.cell_column is None else [args.cell_column]))
         proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale, verb="prevalence")
         weights = read_weights(frame, args.weight_column, args.unlabelled, "prevalence",
-                               relative=True)
+                               relative=True, dots=args.weight_dots)
         ref_weights = None
         batch_labels = _batch_labels(frame, args, proba.shape[0])
         if batch_labels is not None and np.unique(batch_labels).shape[0] < 2:
@@ -382,7 +383,8 @@ def _run(args: argparse.Namespace) -> int:
                              text=[] if args.reference_cell_column is None
                              else [args.reference_cell_column])
             ref_weights = read_weights(ref, ref_weight_column, args.reference, "prevalence",
-                                       flag="--reference-weight-column", relative=True)
+                                       flag="--reference-weight-column", relative=True,
+                                       dots=args.weight_dots)
             if (ref_weight_column is None and args.weight_column is not None
                     and args.weight_column in ref.columns):
                 warn_line("prevalence", (
@@ -520,6 +522,7 @@ def register(subparsers: Any) -> None:
         "their ratios matter: counted by Kish's effective size); the reference file's rows "
         "take --reference-weight-column",
     )
+    add_weight_dots_flag(parser)
     parser.add_argument(
         "--cell-column", metavar="C", default=None,
         help="with --reference: column naming the cell of every unlabelled row, for counts "

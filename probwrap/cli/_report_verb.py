@@ -305,7 +305,8 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
                            text=_text_columns(args))
         P = probabilities(args.scores, frame)
         y = _class_labels(frame, args, columns)
-        given = read_weights(frame, args.weight_column, args.scores, "report")
+        given = read_weights(frame, args.weight_column, args.scores, "report",
+                             dots=getattr(args, "weight_dots", None))
         q = None
         unlabelled_cells: dict = {}
         if args.unlabelled is not None:
@@ -671,7 +672,8 @@ def _handler(args: argparse.Namespace) -> int:
                                                  else [])],
                            text=_text_columns(args))
         p = read_scores(frame, args.score_column, args.scores, scale=args.scale, verb="report")
-        given = read_weights(frame, args.weight_column, args.scores, "report")
+        given = read_weights(frame, args.weight_column, args.scores, "report",
+                             dots=getattr(args, "weight_dots", None))
         late = None
         if late_columns is None:
             y, labels = read_labels(frame, args.label_column, args.scores,

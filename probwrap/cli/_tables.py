@@ -118,6 +118,9 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                     if count:
                         grouped[column] = (count, first, str(written[first]))
                 frame.attrs["grouped_numbers"] = grouped  # warned of by numeric_column
+            # the separator and decimal mark the file was read with (weights whose dots
+            # the file cannot settle: _settle_dots)
+            frame.attrs["csv_read"] = (sep, decimal)
             header = _csv_header(path, encoding, sep)
             if header is not None and len(header) == 1:
                 frame = _blank_lines_as_missing(pd, frame, path, encoding, sep)
@@ -530,12 +533,16 @@ def _row(path: str | Path, column: str, row: int) -> str:
 
 
 def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
-                   infinite_hint: str = "", allow_missing: bool = False) -> np.ndarray:
+                   infinite_hint: str = "", allow_missing: bool = False,
+                   dots: str | None = None) -> np.ndarray:
     """One column as finite floats, or a DataError naming the file, column and first bad row.
 
     ``infinite_hint`` is added to the message when the first bad value is an infinite number.
     ``allow_missing``: missing values (an empty field, ``NA``, a Parquet null) are NaN rather
     than an error; any other value that is not a finite number is still refused.
+    ``dots`` (weights): how a dot is read in a semicolon-separated CSV file without decimal
+    commas, where ``2.500`` may be 2500 (:func:`_settle_dots`): ``"ask"`` (settled by the
+    column's other fields or refused), ``"decimal"``, ``"thousands"``; None: not looked at.
 
     Text is converted with NumPy's correctly rounded parser (every float written with enough
     digits reads back exactly).
@@ -555,8 +562,13 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
         # thousands separators dropped where the form leaves no doubt (1.391,03 with decimal
         # commas, 3,703.50 with decimal points); an ambiguous 2.500 is refused
         written = raw
+        dotted = (0, 0)
+        if dots is not None and frame.attrs.get("csv_read") == (";", "."):
+            raw, *dotted = _settle_dots(raw, path, column, flag, dots)
         raw, count, first = _plain_number_text(raw, frame.attrs.get("decimal", "."), path,
                                                column)
+        if dotted[0]:
+            count, first = dotted
         grouped = ((count, first, str(written[first])) if count else
                    frame.attrs.get("grouped_numbers", {}).get(column))
         try:
@@ -654,6 +666,69 @@ def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
             first = i
         count += 1
     return out, count, first
+
+
+#: one dot before exactly three digits, as a whole number with a thousands separator is
+#: written (2.500): 2500, or 2.5 with a point
+_ONE_DOT_GROUP = re.compile(r"[-+]?[1-9]\d{0,2}\.\d{3}")
+#: two or more such dots (1.234.567): only thousands
+_DOT_GROUPS_MANY = re.compile(r"[-+]?[1-9]\d{0,2}(?:\.\d{3}){2,}")
+#: a whole number of four digits or more written without separators (2500)
+_UNGROUPED_WHOLE = re.compile(r"[-+]?[1-9]\d{3,}")
+
+
+def _settle_dots(raw: np.ndarray, path: str | Path, column: str, flag: str,
+                 dots: str) -> tuple[np.ndarray, int, int]:
+    """Weights of a semicolon-separated file without decimal commas, with their dots settled.
+
+    Such a file is read with decimal points, but spreadsheets in many European locales write
+    whole numbers with a dot between thousands and no decimals: ``2.500`` is then 2500, and
+    a column of such weights shows no decimal comma to give the locale away. The column's
+    own fields settle it (``dots="ask"``): a field with a dot that is not a thousands group
+    (``2.5``, ``0.500``, ``2.5E+03``) or a whole number of four digits or more without one
+    (``2500``) means decimal points; a field with two groups (``1.234.567``) means thousands
+    (the dots are dropped, counted for the warning of dropped separators). A column whose
+    dotted fields all have one dot before exactly three digits and nothing else to settle
+    it is refused, naming the first such row, both readings and ``--weight-dots``, which
+    settles it (``"decimal"``: read as written; ``"thousands"``: the dots dropped, and a dot
+    anywhere else refused). Returns the fields, how many lost dots and the first such row.
+    """
+    if dots == "decimal":
+        return raw, 0, 0
+    fields = [(i, v.strip()) for i, v in enumerate(raw) if isinstance(v, str) and v.strip()]
+    one = [i for i, t in fields if _ONE_DOT_GROUP.fullmatch(t)]
+    many = [i for i, t in fields if _DOT_GROUPS_MANY.fullmatch(t)]
+    if dots == "ask" and not one and not many:
+        return raw, 0, 0
+    grouped = set(one) | set(many)
+    if dots == "thousands":
+        stray = next((i for i, t in fields if "." in t and i not in grouped), None)
+        if stray is not None:
+            raise DataError(
+                f"{_row(path, column, stray)}: {shown(raw[stray])} is not a whole number "
+                f"with dots between thousands, as {flag} is read with --weight-dots thousands")
+    else:
+        settles = next((i for i, t in fields if i not in grouped and _is_number(t) and (
+            "." in t or _UNGROUPED_WHOLE.fullmatch(t))), None)
+        if settles is not None:
+            return raw, 0, 0  # decimal points (a many-group field is then refused as text)
+        if not many:
+            i = one[0]
+            text = fields[[j for j, _ in fields].index(i)][1]
+            plain = text.replace(".", "")
+            raise DataError(
+                f"{_row(path, column, i)}: {shown(raw[i])} could be {plain} (a dot between "
+                f"thousands, as spreadsheets in many European locales write whole numbers) or "
+                f"{text} (a decimal point): in this semicolon-separated file without decimal "
+                f"commas every weight with a dot ({len(one)}) has exactly three digits after "
+                "it, so nothing tells which. Give --weight-dots thousands (read "
+                f"{plain}) or --weight-dots decimal (read {text}), or write the column "
+                f"without thousands separators ({flag})")
+    out = raw.copy()
+    for i in sorted(grouped):
+        out[i] = raw[i].strip().replace(".", "")
+    first = min(grouped) if grouped else 0
+    return out, len(grouped), first
 
 
 def _is_number(text: str) -> bool:
@@ -827,15 +902,16 @@ def read_labels(
 
 def read_weights(frame: Any, column: str | None, path: str | Path,
                  verb: str, *, flag: str = "--weight-column",
-                 relative: bool = False) -> np.ndarray | None:
+                 relative: bool = False, dots: str | None = None) -> np.ndarray | None:
     """The ``--weight-column`` as finite weights >= 0 with a positive sum, or None; a
     DataError names the file, the column, the first bad row and ``flag``. ``relative``: the
     verb counts the weights by Kish's effective size (only their ratios matter), so large
-    weights draw no warning."""
+    weights draw no warning. ``dots``: ``--weight-dots`` (None: settled by the column or
+    refused, :func:`_settle_dots`; a semicolon-separated file without decimal commas only)."""
     if column is None:
         return None
     try:
-        w = numeric_column(frame, column, path, flag=flag)
+        w = numeric_column(frame, column, path, flag=flag, dots=dots or "ask")
     except DataError as exc:  # a missing or non-number weight: say which option read it
         text = str(exc)
         raise DataError(text if flag in text else f"{text} ({flag})") from None
