@@ -17,6 +17,12 @@ factor (0.5, 1, 2 times the prevalence), four batches are adapted to:
 Printed per kind and factor: coverage of the 95 % interval, the share of draws that raised
 ``RepeatedRowsWarning``, the misses and how many drew no warning at all.
 
+``--dask`` (session 25) adapts every draw but ``with_cells`` once more as a Dask DataFrame of
+two partitions read the way sets beyond 20,000 rows are read (``KEPT_ROWS`` set to 0: a tally
+of binned scores for the estimate, the repeats keyed by features where the rows live and added
+up by a shuffle): kinds ``<kind>_dask``. Their warning shares should equal the in-memory ones
+draw for draw (printed: ``dask_disagree``), ``without`` and ``fresh`` never warning.
+
 Run: ``nice python benchmarks/shift_repeated_rows.py [--sets phdpubs nwtco] [--seeds 50]``
 (about two minutes per set and 50 seeds).
 """
@@ -50,7 +56,26 @@ def data(which: str):
     return X, y, cap, np.setdiff1d(np.arange(len(y)), cap)
 
 
-def run(which: str, seeds: range) -> pd.DataFrame:
+def _adapt_dask(psw, Xb):
+    """``psw.adapt`` on ``Xb`` as a Dask DataFrame read as a set beyond 20,000 rows; the
+    warnings' class names."""
+    import dask
+    import dask.dataframe as dd
+
+    import probwrap.scale._tally as tally_module
+
+    kept, tally_module.KEPT_ROWS = tally_module.KEPT_ROWS, 0
+    try:
+        with dask.config.set(scheduler="synchronous"), warnings.catch_warnings(
+                record=True) as ws:
+            warnings.simplefilter("always")
+            psw.adapt(dd.from_pandas(Xb, npartitions=2))
+    finally:
+        tally_module.KEPT_ROWS = kept
+    return sorted({type(x.message).__name__ for x in ws})
+
+
+def run(which: str, seeds: range, with_dask: bool = False) -> pd.DataFrame:
     X, y, cap, fresh = data(which)
     rows = []
     for seed in seeds:
@@ -92,6 +117,14 @@ def run(which: str, seeds: range) -> pd.DataFrame:
                                  est=float(psw.target_prior_[1]), lo=lo, hi=hi,
                                  cover=bool(lo - 1e-9 <= truth <= hi + 1e-9),
                                  weight=psw.adaptation_weight_, warn=",".join(caught)))
+                if with_dask and not grouped:
+                    caught_d = _adapt_dask(psw, Xb)
+                    lo, hi = psw.target_prior_interval_[1]
+                    rows.append(dict(set=which, seed=seed, factor=factor, kind=kind + "_dask",
+                                     truth=truth, est=float(psw.target_prior_[1]), lo=lo, hi=hi,
+                                     cover=bool(lo - 1e-9 <= truth <= hi + 1e-9),
+                                     weight=psw.adaptation_weight_, warn=",".join(caught_d),
+                                     memory_warned="RepeatedRowsWarning" in caught))
     return pd.DataFrame(rows)
 
 
@@ -100,8 +133,10 @@ def main() -> None:
     ap.add_argument("--sets", nargs="*", default=["phdpubs", "nwtco"])
     ap.add_argument("--seeds", type=int, default=50)
     ap.add_argument("--out")
+    ap.add_argument("--dask", action="store_true",
+                    help="adapt every draw as Dask rows read as beyond 20,000 rows too")
     a = ap.parse_args()
-    df = pd.concat([run(s, range(a.seeds)) for s in a.sets], ignore_index=True)
+    df = pd.concat([run(s, range(a.seeds), a.dask) for s in a.sets], ignore_index=True)
     if a.out:
         df.to_csv(a.out, index=False)
     df["repeated"] = df.warn.str.contains("RepeatedRowsWarning")
@@ -110,6 +145,11 @@ def main() -> None:
     print(df.groupby(["set", "kind", "factor"]).agg(
         cover=("cover", "mean"), warned_repeats=("repeated", "mean"), misses=("miss", "sum"),
         silent_misses=("silent_miss", "sum"), draws=("cover", "size")).to_string())
+    if "memory_warned" in df:
+        d = df[df.kind.str.endswith("_dask")]
+        disagree = (d.repeated != d.memory_warned.astype(bool)).groupby([d.set, d.kind]).sum()
+        print("\ndask_disagree (draws whose Dask warning differs from memory's):")
+        print(disagree.to_string())
 
 
 if __name__ == "__main__":
