@@ -353,14 +353,12 @@ class _RuleFitting:
         import warnings
 
         keep = w > 0
-        q, f = p[keep], np.asarray(fold)[keep]
+        every = bool(keep.all())
+        q = p if every else p[keep]
         if q.size < 2:
             return
-        order = np.lexsort((q, f))
-        qs, fs = q[order], f[order]
-        same_fold = fs[1:] == fs[:-1]
-        if np.any(qs[1:][same_fold] != qs[:-1][same_fold]):
-            return  # some fold ranks its rows
+        if _some_fold_ranks(q, np.asarray(fold), None if every else keep):
+            return
         acts = "all of them" if self.cutoff_ < q.min() else (
             "none of them" if self.cutoff_ >= q.max() else "the rows of some folds")
         values = np.unique(q)
@@ -603,3 +601,29 @@ def _cutoff_at_bin_edge(tally: Any, cutoff: float) -> float:
     edge = float(expit(edges[below, 1].max()))
     # keep the representatives' decisions (a representative can sit on its bin's lower edge)
     return edge if edge < reps[~below].min() else float(cutoff)
+
+
+def _some_fold_ranks(q: np.ndarray, fold: np.ndarray, keep: np.ndarray | None) -> bool:
+    """Whether some fold's rows (``fold``, restricted to ``keep`` where given, aligned with
+    ``q``) have two different values of ``q``. One pass per fold over the rows, no sort and no
+    copy as long as the rows (the fold numbers of a frozen model are a view of one value; a
+    cross-fit has a handful of folds): a tuned fit on 10^6 rows peaked here at 8.5 times the
+    scores when the check sorted the rows by fold and value."""
+    if fold.ndim == 1 and fold.shape[0] > 0 and fold.strides[0] == 0:
+        return bool(q.min() != q.max())  # one fold
+    f = fold if keep is None else fold[keep]
+    if f.dtype.kind in "iub" and f.size:
+        lo, hi = int(f.min()), int(f.max())
+        if hi - lo <= 64:
+            for value in range(lo, hi + 1):
+                in_fold = f == value
+                if not in_fold.any():
+                    continue
+                r = q[in_fold]
+                if r.min() != r.max():
+                    return True
+            return False
+    order = np.lexsort((q, f))
+    qs, fs = q[order], f[order]
+    same_fold = fs[1:] == fs[:-1]
+    return bool(np.any(qs[1:][same_fold] != qs[:-1][same_fold]))

@@ -245,6 +245,17 @@ def fold_columns(fold_classes: np.ndarray, out: np.ndarray, classes: np.ndarray,
     return block
 
 
+def _adjacent_equal(sorted_keys: np.ndarray, block: int = 1 << 16) -> bool:
+    """Whether two neighbours of ``sorted_keys`` are equal, block by block (no comparison array
+    as long as the keys)."""
+    n = sorted_keys.shape[0]
+    for start in range(0, max(n - 1, 0), block):
+        stop = min(start + block, n - 1)
+        if np.any(sorted_keys[start + 1:stop + 1] == sorted_keys[start:stop]):
+            return True
+    return False
+
+
 def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray) -> np.ndarray | None:
     """Cell of every row (rows with identical features share one) when weighted rows with
     identical features carry different labels, else None.
@@ -268,19 +279,28 @@ def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray)
     sw = None if sample_weight is None else np.asarray(sample_weight, dtype=float).ravel()
     weighted = sw is not None and sw.size > 0 and bool(np.any(sw != sw[0]))
     n = y_index.shape[0]
-    try:
-        if hasattr(X, "iloc") and hasattr(X, "columns"):
+    if hasattr(X, "iloc") and hasattr(X, "columns"):
+        def row_keys() -> np.ndarray:
             import pandas as pd
 
-            keys = pd.util.hash_pandas_object(X, index=False).to_numpy()
-        elif isinstance(X, np.ndarray) and X.ndim == 2 and X.dtype.kind in "biuf":
-            keys = _row_hashes(X)
-        else:
+            return pd.util.hash_pandas_object(X, index=False).to_numpy()
+    elif isinstance(X, np.ndarray) and X.ndim == 2 and X.dtype.kind in "biuf":
+        def row_keys() -> np.ndarray:
+            return _row_hashes(X)
+    else:
+        return None
+    try:
+        # every row distinct is the usual case, decided without the inverse and without a
+        # second array as long as the rows: the keys are sorted in place (fresh unless a
+        # DataFrame's hashes are a view) and made again only where some rows repeat
+        keys = row_keys()
+        if not keys.flags.owndata:
+            keys = keys.copy()
+        keys.sort()
+        if not _adjacent_equal(keys):
             return None
-        sorted_keys = np.sort(keys)
-        if not np.any(sorted_keys[1:] == sorted_keys[:-1]):
-            return None  # every row distinct: the usual case, decided without the inverse
-        _, cells = np.unique(keys, return_inverse=True)
+        del keys
+        _, cells = np.unique(row_keys(), return_inverse=True)
     except (TypeError, ValueError):
         return None
     cells = np.asarray(cells, dtype=np.intp).ravel()
@@ -292,6 +312,7 @@ def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray)
     if weighted:
         lo = np.full(n_cells, np.iinfo(np.intp).max)
         hi = np.full(n_cells, -1)
+        y_index = np.asarray(y_index, dtype=np.intp)
         np.minimum.at(lo, cells, y_index)
         np.maximum.at(hi, cells, y_index)
         if np.any(hi > lo):
@@ -406,14 +427,25 @@ def _row_hashes(X: np.ndarray, block: int = 32_768) -> np.ndarray:
     n, d = X.shape
     mult = (np.arange(d, dtype=np.uint64) * np.uint64(0x9E3779B97F4A7C15)) | np.uint64(1)
     h = np.empty(n, dtype=np.uint64)
+    # blocks of about 2**20 values (8 MiB; at most ``block`` rows), copied column by column so
+    # that each column's pass reads contiguous memory: on 10^5 rows x 200 features this took
+    # 0.05 s and 17 MiB, where blocks of 32,768 whole rows read column-wise took 0.08-0.11 s
+    # and 101 MiB (the same hashes)
+    rows = max(1024, min(block, (1 << 20) // max(d, 1)))
+    shift = np.uint64(29)
     with np.errstate(over="ignore"):
-        for start in range(0, n, block):
-            bits = (np.array(X[start:start + block], dtype=np.float64) + 0.0).view(np.uint64)
-            acc = np.full(bits.shape[0], np.uint64(0xCBF29CE484222325))  # -0.0 became 0.0
+        for start in range(0, n, rows):
+            cols = np.array(X[start:start + rows].T, dtype=np.float64, order="C")
+            cols += 0.0  # -0.0 becomes 0.0
+            bits = cols.view(np.uint64)
+            acc = np.full(bits.shape[1], np.uint64(0xCBF29CE484222325))
+            step = np.empty_like(acc)
             for j in range(d):
-                acc = (acc ^ bits[:, j]) * mult[j]
-                acc ^= acc >> np.uint64(29)
-            h[start:start + block] = acc
+                acc ^= bits[j]
+                acc *= mult[j]
+                np.right_shift(acc, shift, out=step)
+                acc ^= step
+            h[start:start + rows] = acc
     return h
 
 
@@ -588,7 +620,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             fold = np.broadcast_to(np.array(-1, dtype=int), (n,))
             n_folds = 0
             classes = est_classes
-            cells = feature_cells(X, sw, np.asarray(y_index, dtype=np.intp))
+            cells = feature_cells(X, sw, y_index)
         else:
             y_index, classes = check_labels(y_arr, name="y")
             est_params, split_params = self._route_fit_params(

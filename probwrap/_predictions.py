@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from ._validation import plain
+from ._validation import plain, row_sum
 
 __all__ = ["HeldOutPredictions", "check_model_probabilities", "resolve_response",
            "rows_summing_to_one", "ROUNDING_SUM_LIMIT"]
@@ -119,6 +119,9 @@ def check_model_probabilities(values: np.ndarray, response: str, who: str, rows:
 #: their sums (:func:`rows_summing_to_one`); a row further off is left for those checks to refuse
 ROUNDING_SUM_LIMIT = 1e-3
 
+#: Rows per block of :func:`rows_summing_to_one`'s check.
+_SUM_CHECK_ROWS = 65_536
+
 
 def rows_summing_to_one(values: np.ndarray, response: str, who: str) -> np.ndarray:
     """A model's ``predict_proba`` output with rows that miss a sum of one by rounding divided
@@ -147,12 +150,20 @@ def rows_summing_to_one(values: np.ndarray, response: str, who: str) -> np.ndarr
     """
     if response != "predict_proba" or values.ndim != 2 or values.size == 0:
         return values
-    sums = values.sum(axis=1)
-    off = np.abs(sums - 1.0)
-    worst = float(off.max())
-    if not (1e-6 < worst <= ROUNDING_SUM_LIMIT):  # (NaN: left for the checks)
+    # the largest miss, block by block: no temporaries as long as the rows (a tuned fit on
+    # 10^6 rows peaked here, at 5.1 times the scores, with whole-column sums and misses)
+    worst = 0.0
+    for start in range(0, values.shape[0], _SUM_CHECK_ROWS):
+        miss = row_sum(values[start:start + _SUM_CHECK_ROWS])
+        miss -= 1.0
+        block_worst = float(np.abs(miss, out=miss).max())
+        if np.isnan(block_worst):
+            return values  # (NaN: left for the checks)
+        worst = max(worst, block_worst)
+    if not (1e-6 < worst <= ROUNDING_SUM_LIMIT):
         return values
-    bad = off > 1e-6
+    sums = row_sum(values)
+    bad = np.abs(sums - 1.0) > 1e-6
     warnings.warn(
         f"{who}'s predict_proba returned {int(bad.sum())} row(s) whose probabilities sum to "
         f"one only within {worst:.2g} (the model's rounding; e.g. GaussianNB where a column was "
