@@ -135,3 +135,23 @@ def test_feature_cells_unchanged_by_the_in_place_sort(as_frame):
                             return_inverse=True)
     assert np.array_equal(cells, expected.ravel())
     assert np.array_equal(Xc, before)
+
+
+def test_rows_surely_distinct_agrees_with_the_codes():
+    from probwrap.shift._repeats import _codes_of, _row_matrix, _rows_surely_distinct
+
+    rng = np.random.default_rng(11)
+    for trial in range(60):
+        n = int(rng.integers(2, 3000))
+        p1 = np.round(rng.random(n), int(rng.integers(1, 6)))  # ties at few decimals
+        blocks = [np.column_stack([1 - p1, p1])]
+        if trial % 2:
+            blocks.append(rng.integers(0, int(rng.integers(1, 4 * n)), size=n).astype(float))
+        if trial % 5 == 0:
+            blocks[0][0] = [-0.0, 1.0]
+            blocks[0][-1] = [0.0, 1.0]  # -0.0 and 0.0: the same row
+        m = _row_matrix(*blocks)
+        distinct = int(_codes_of(m).max()) + 1 == n
+        # never "surely distinct" where two rows are equal; distinct rows found so too
+        # (a hash collision, about 2**-64 a pair, would only send them to the codes)
+        assert _rows_surely_distinct(m) == distinct
