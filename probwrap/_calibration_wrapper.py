@@ -771,9 +771,13 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             return float(self.clip)
         if self.response_ == "decision_function":
             return DEFAULT_CLIP  # not used: decision values are not clipped
-        v = values[w > 0] if values.shape[0] == w.shape[0] else values
-        positive = v[v > 0]
-        return self._clip_from_smallest(float(positive.min()) if positive.size else np.inf)
+        v = values
+        if values.shape[0] == w.shape[0]:
+            keep = w > 0
+            if not keep.all():
+                v = values[keep]
+        # the smallest positive value without copying the positive ones out (the same value)
+        return self._clip_from_smallest(float(np.min(v, where=v > 0, initial=np.inf)))
 
     @staticmethod
     def _clip_from_smallest(smallest: float) -> float:

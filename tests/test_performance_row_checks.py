@@ -155,3 +155,20 @@ def test_rows_surely_distinct_agrees_with_the_codes():
         # never "surely distinct" where two rows are equal; distinct rows found so too
         # (a hash collision, about 2**-64 a pair, would only send them to the codes)
         assert _rows_surely_distinct(m) == distinct
+
+
+def test_data_chosen_clip_is_half_the_smallest_positive_probability_of_kept_rows():
+    from probwrap.calibration._logodds import clip_from_smallest
+    from probwrap.shift._calibration import heldout_clip
+
+    p = np.array([[1.0, 0.0], [0.99, 0.01], [0.5, 0.5], [1e-9, 1.0 - 1e-9]])
+    # definition: half the smallest non-zero probability of the rows of weight > 0
+    assert heldout_clip(p[:, :1].ravel()) == clip_from_smallest(1e-9)
+    assert heldout_clip(p[:, :1].ravel(), np.array([1.0, 1.0, 1.0, 0.0])) \
+        == clip_from_smallest(0.5)  # 1e-9 on a row of weight 0: not read
+    assert heldout_clip(np.zeros(3)) == clip_from_smallest(np.inf)
+    q = np.array([0.3, 0.0, 0.02, 0.7])
+    before = q.copy()
+    assert heldout_clip(q, np.array([1.0, 1.0, 0.0, 2.0])) == clip_from_smallest(0.3)
+    assert heldout_clip(q, np.ones(4)) == clip_from_smallest(0.02)
+    assert np.array_equal(q, before)

@@ -105,12 +105,14 @@ def heldout_clip(proba: np.ndarray, sample_weight: np.ndarray | None = None) -> 
     p = np.asarray(proba, dtype=float)
     if sample_weight is not None and p.shape[0] == np.shape(sample_weight)[0]:
         w = np.asarray(sample_weight, dtype=float)
-        p = p[w > 0]
-        w = w[w > 0]
+        keep = w > 0
+        if not keep.all():
+            p = p[keep]
+            w = w[keep]
     else:
         w = np.ones(p.shape[0])
-    positive = p[p > 0]
-    clip = clip_from_smallest(float(positive.min()) if positive.size else np.inf)
+    # the smallest positive probability without copying the positive ones out (the same value)
+    clip = clip_from_smallest(float(np.min(p, where=p > 0, initial=np.inf)))
     if p.ndim == 2 and p.shape[1] >= 2 and w.size:
         from ..calibration._base import count_weights
 
