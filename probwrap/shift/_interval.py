@@ -178,6 +178,7 @@ def score_interval(
     source_cells: Any = None,
     target_moments: Any = None,
     null_variance_below: float = 100.0,
+    null_variance_fade_from: float | None = None,
 ) -> tuple[np.ndarray, bool]:
     r"""Two-sample score interval for the positive-class prior of unlabelled rows (two classes).
 
@@ -238,7 +239,15 @@ def score_interval(
     under-covered where a skewed score's variance came out small (see
     ``benchmarks/small_batch_interval.py`` and docs/prior_shift.md, "Small batches").
     From ``null_variance_below`` rows on the two variances agree at the true prior and the
-    rows' own one, which holds whatever the prior-shift model, is kept.
+    rows' own one, which holds whatever the prior-shift model, is kept. Between
+    ``null_variance_fade_from`` and ``null_variance_below`` rows the two are blended, the
+    weight of the one under the tested prior falling linearly from 1 to 0, and it is used
+    only with enough labelled rows, its weight multiplied by one rising linearly from 0 at
+    ``null_variance_fade_from`` to 1 at ``null_variance_below`` effective labelled rows: a
+    convex combination of two variances that both hold at the true prior, so that the
+    interval moves continuously with either count (as a step at 100 rows its ends moved by
+    up to 0.55 between 99.99 and 100.01 rows on scikit-learn's breast cancer set;
+    docs/prior_shift.md, "Small batches: the 100-row switch and broken assumptions").
 
     With ``cells`` / ``source_cells`` (aggregated counts: the rows of one group share a cell)
     a side's variance is the cluster-robust (sandwich) variance of its mean with the cells as
@@ -290,6 +299,11 @@ def score_interval(
         prior (above), where the labelled rows number at least as many effective rows (fewer
         are too noisy to stand in for the batch); 0 always uses the rows' own variance (the
         interval before 5 December 2026).
+    null_variance_fade_from : float, default=None
+        Where the variance under the tested prior starts to fade (above): between this many
+        and ``null_variance_below`` effective rows the two variances are blended. None: half
+        of ``null_variance_below``; equal to it gives the step at ``null_variance_below``
+        of before.
 
     Returns
     -------
@@ -377,9 +391,30 @@ def score_interval(
     # batch's, and on 16 labelled rows (statsmodels' spector) it was too noisy to trust —
     # benchmarks/prior_strong_evidence.py's spector cells covered 8 and 9 of 10 with it, 10 and
     # 10 without)
+    fade_from = (0.5 * float(null_variance_below) if null_variance_fade_from is None
+                 else null_variance_fade_from)
+    if (isinstance(fade_from, bool) or not isinstance(fade_from, (int, float))
+            or not 0 <= fade_from <= float(null_variance_below)):
+        raise ValueError("`null_variance_fade_from` must be a number between 0 and "
+                         f"`null_variance_below` ({plain(null_variance_below)!r}); got "
+                         f"{plain(null_variance_fade_from)!r}.")
+    below, n_s_all = float(null_variance_below), sum(st[3] for st in strata)
+    # the weight of the variance under the tested prior: 1 up to fade_from unlabelled rows,
+    # falling linearly to 0 at null_variance_below, times a weight on the labelled rows rising
+    # linearly from 0 at fade_from to 1 at null_variance_below, so that the interval moves
+    # continuously with either count instead of jumping at one of them
+    # (benchmarks/small_batch_switch.py)
+    if n_t >= below:
+        w_unl = 0.0
+    else:
+        w_unl = 1.0 if n_t <= fade_from else (below - n_t) / (below - fade_from)
+    if n_s_all >= below:
+        w_lab = 1.0
+    else:
+        w_lab = 0.0 if n_s_all <= fade_from else (n_s_all - fade_from) / (below - fade_from)
+    null_weight = w_unl * w_lab
     under_null = (folds is None and target_moments is None and cell_t is None
-                  and n_t < float(null_variance_below)
-                  and sum(st[3] for st in strata) >= float(null_variance_below))
+                  and null_weight > 0.0)
 
     def stat(t: np.ndarray) -> np.ndarray:
         """The statistic at each candidate prior, on the chi-square scale: ``T`` referred to
@@ -434,7 +469,9 @@ def score_interval(
                 var = var + comp
                 spread = spread + comp**2 / max(g_s - 1.0, 1.0)
             if under_null:  # few unlabelled rows: their score's variance at the tested prior
-                target_comp = np.maximum(second_s - m_s**2, 0.0) / max(n_t, 1.0)
+                null_comp = np.maximum(second_s - m_s**2, 0.0) / max(n_t, 1.0)
+                target_comp = (null_comp if null_weight >= 1.0 else
+                               null_weight * null_comp + (1.0 - null_weight) * target_comp)
             var = var + target_comp
             spread = spread + target_comp**2 / max(n_t - 1.0, 1.0)
             raw = (m_t - m_s) ** 2 / np.maximum(var, 1e-300)
