@@ -11,7 +11,9 @@ at known prevalences and measures, on the same batches,
 - ``now``: the interval it shows now (``PriorEstimate.interval``): below 100 unlabelled rows the
   same test with their variance taken under the tested prevalence (from the labelled rows of
   each class re-weighted to it) -- the choice that separates Wilson's (1927) score interval
-  from the Wald interval (Brown, Cai & DasGupta 2001, Statistical Science 16:101-133);
+  from the Wald interval (Brown, Cai & DasGupta 2001, Statistical Science 16:101-133); since
+  session 25 it fades out between 50 and 100 rows (``benchmarks/small_batch_switch.py``), which
+  leaves 20-row batches as they were;
 - ``likelihood``: the likelihood-ratio (profile likelihood) interval of the batch's mixing
   share with the calibrated posteriors held fixed, ``{pi: 2 (l(pi_hat) - l(pi)) <= chi2_1}``
   (Wilks 1938; the mixture likelihood of Saerens, Latinne & Decaestecker 2002, eq. 2.9), which
