@@ -223,6 +223,22 @@ _BASE_RATE_SE = 1.0
 #: 24, "auto cells above 1.10x").
 _PASS_OVER_TEMPERATURE_OFF_BASE_RATE = True
 
+#: Two classes: where Platt scaling is tried before temperature scaling (see
+#: ``_PLATT_FIRST_CROSSFIT_MIN_ROWS`` and ``_PLATT_FIRST_MAX_MINORITY_SHARE``) and the
+#: one-standard-error rule passes it over for scoring beyond a standard error of the best map,
+#: temperature scaling, Platt scaling without its intercept, is passed over too and the rule goes
+#: on to the next map in its order. The rule measures each map against the best one by the
+#: standard error of their paired per-row difference: small for a map that nearly coincides with
+#: the best (Platt beside beta scaling on few rows), wide for one that differs more, so the map
+#: without the intercept that Platt-first asked for passed where Platt scaling did not, without
+#: scoring better. stevedata's voteincome, voters thinned to 5 %, logistic regression
+#: cross-fitted on 100 rows (5 voters): beta 0.1985 on the folds, Platt 0.1989 (standard error
+#: 0.0003: passed over), temperature 0.1988 (standard error 0.0095: kept); test log loss 1.10x
+#: scikit-learn's sigmoid, beta 0.96x. Measured on hunt24_sweep.py's draws and 24 redraws of its
+#: named cells (docs/small_data.md, "auto on 40 cross-fitted rows (session 25)"); ``False``
+#: switches the rule off.
+_PASS_OVER_TEMPERATURE_AFTER_PLATT = True
+
 
 def _boundary_of(cal: Any) -> str | None:
     """Why a fitted map (or any map of a one-vs-rest list) sits at a boundary, or None."""
@@ -631,11 +647,24 @@ class _AutoChoice:
         )
         vector_first = (not binary and ho.n_folds > 0
                         and n_rows >= _VECTOR_FIRST_CROSSFIT_MIN_ROWS)
+        platt_beyond = False  # Platt scaling tried and passed over for its score
         for name in self._simplicity_order(eligible, platt_first, vector_first):
             loss, se = scores_out[name]
             if (name == "temperature" and name != best
                     and self._temperature_short_of_shares(means, scores, y, w, notes)):
                 continue
+            if (name == "temperature" and binary and name != best and platt_beyond
+                    and _PASS_OVER_TEMPERATURE_AFTER_PLATT):
+                text = (
+                    "passed over by the one-standard-error rule: temperature scaling is Platt "
+                    "scaling without its intercept, and Platt scaling, tried before it, scored "
+                    f"{means['platt']:.4g}, beyond a standard error "
+                    f"({scores_out['platt'][1]:.3g}) of the best map ({plain(best)!r}, "
+                    f"{means[best]:.4g})"
+                )
+                notes[name] = text if name not in notes else notes[name] + "; " + text
+                continue
+            platt_beyond = platt_beyond or (name == "platt" and loss - means[best] > se)
             if loss - means[best] <= se:
                 if (name == "temperature" and binary and name != best
                         and (_PASS_OVER_TEMPERATURE_OFF_BASE_RATE or (
