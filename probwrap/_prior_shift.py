@@ -152,7 +152,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     them, for an estimator cross-fitted here always the fitted map, as the test judged the fold
     models and not the refit one; the estimator's own probabilities with
     ``calibration=None``; of the refit model, or averaged over the fold models, see
-    ``predict_with``), re-weighted to the prior in use,
+    ``predict_with``; on at most 100 labelled rows of two classes where a row got a probability
+    for its own class below what the rows can resolve, the map ``CalibrationWrapper(method="auto")`` chooses among the smooth maps on
+    the same held-out probabilities and fixed folds, ``output_map_``), re-weighted to the prior in use,
     ``applied_prior_``: ``target_prior`` when it is given; otherwise, after ``adapt``, the
     source prior moved toward the estimate ``target_prior_`` by the share the evidence
     supports, ``adaptation_weight_ = max(0, 1 - evidence_cutoff_ * (k - 1) / shift_statistic_)``
@@ -313,6 +315,18 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         measured; see ``predict_with``).
     calibrator_ : BiasCorrectedScaling or None
         The calibration used for estimation and adjustment.
+    output_map_ : CalibrationWrapper or None
+        Set where ``fit`` had at most 100 labelled rows (weights read as row counts, or Kish's
+        effective size) of two classes, the model gave some of them a probability above 0 but
+        below the row bound ``1 / (4 (N + 1))`` (near 0 or 1; a forest's grid of multiples of
+        ``1 / n_trees`` does not reach it), and a labelled row got less than that bound, but
+        not exactly 0, for its own class (its confidence contradicted):
+        ``CalibrationWrapper(method="auto")`` choosing among temperature, Platt and beta
+        scaling on folds fixed by the rows (the same on Dask and Spark, drawn at no
+        ``random_state``), fitted on the held-out probabilities, whose output
+        ``predict_proba`` returns (re-weighted to ``applied_prior_`` after ``adapt``; the prior
+        estimate still reads ``calibrator_``). None otherwise. Measured in
+        docs/prior_shift.md, "Before adapt on small labelled sets".
     known_prior_ : ndarray of shape (n_classes,) or None
         ``target_prior`` validated and put in ``classes_`` order (None when not given).
     prior_estimator_ : probwrap.shift.PriorEstimator
@@ -641,6 +655,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # cells of 30-150 labelled rows (docs/prior_shift.md, "A base model fitted here"):
             # test log loss over scikit-learn's sigmoid 0.860 -> 0.841, cells above 1.10x 47 -> 38.
             est.calibrator_.identity_kept_ = False
+        self.output_map_ = None
+        if not ho.from_tally and est.calibrator_ is not None:
+            self._choose_output_map(est, sample_weight)
         self._source_tally = self.tally_ if ho.from_tally else None
         if (not ho.from_tally and not self.keep_heldout and est._src_cells is None
                 and np.count_nonzero(ho.sample_weight) > SMALL_HELDOUT_ROWS):
@@ -679,6 +696,29 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if counts is None:
             return None
         return (*counts, *(getattr(self, "_labelled_clumps", None) or ()))
+
+    def _choose_output_map(self, est: PriorEstimator, sample_weight: Any) -> None:
+        """On at most 100 labelled rows of two classes, where the model gives probabilities
+        nearer 0 or 1 than the row bound ``1 / (4 (N + 1))`` and the labels contradict that
+        confidence — a row given less than the bound (but not exactly 0) for its own class —
+        ``predict_proba`` returns the probabilities of ``CalibrationWrapper(method="auto")``
+        over the smooth maps, on folds fixed by the rows, fitted on the same held-out
+        probabilities (``output_map_``;
+        :mod:`probwrap._prior_shift_output_map`). The map is fixed here, so ``adapt`` re-weights the
+        same probabilities and ``target_prior=source_prior_`` returns them unchanged; the prior
+        estimate keeps ``calibrator_``'s map. Dask and Spark sets of at most 20,000 rows come
+        here with their rows (``from_tally`` is False), so they choose the same map. Measured in
+        docs/prior_shift.md, "Before adapt on small labelled sets"."""
+        from ._prior_shift_output_map import contradicted_confidence, fit_output_map
+
+        cal = est.calibrator_
+        p, y_idx, w = est._src
+        reason = contradicted_confidence(p, y_idx, w)
+        if reason is None:
+            return
+        self.output_map_ = fit_output_map(p, y_idx, None if sample_weight is None else w,
+                                          self.random_state, "PriorShiftWrapper.fit")
+        cal.output_map_ = self.output_map_
 
     def _unlabelled_row_codes(self, X: Any) -> np.ndarray | None:
         """:func:`_row_identity_codes` of rows to judge, where the labelled rows' were read at
@@ -1610,7 +1650,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         est = self.prior_estimator_
         if getattr(self, "predicted_with_", "refit") != "fold_models":
             return est.calibrate_output(self._inner_output(X, "predict_proba"))
-        folds = np.stack([est.calibrate(f) for f in self._fold_proba(X)])
+        folds = np.stack([est.calibrate_output(f) for f in self._fold_proba(X)])
         return np.tensordot(self._fold_share, folds, axes=1)
 
     def predict_proba(self, X: Any) -> np.ndarray:

@@ -44,6 +44,7 @@ LAYERS = {
     "_column_models": 3,  # scores as a fitted model, for the wrappers on computed scores
     "_prior_shift": 3,
     "_prior_shift_tallied": 3,
+    "_prior_shift_output_map": 3,  # PriorShiftWrapper's output map on small sets (fits auto)
     "_weights": 1,  # the shared warnings about how sample_weight is read (wrappers, PriorEstimator)
     "__init__": 3,  # the package's top level: the wrappers' public face
     "plot": 4,

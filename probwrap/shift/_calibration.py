@@ -593,7 +593,13 @@ class BiasCorrectedScaling:
 
     def predict_output(self, proba: Any) -> np.ndarray:
         """Posteriors to hand to a user: :meth:`predict`, or the model's own probabilities
-        (at least ``floor_``, rows renormalised) when the likelihood-ratio test kept them."""
+        (at least ``floor_``, rows renormalised) when the likelihood-ratio test kept them; or,
+        where :class:`probwrap.PriorShiftWrapper` set an ``output_map_`` (a small set whose
+        labelled rows contradict the model's confidence, :mod:`probwrap._prior_shift_output_map`),
+        that map's probabilities."""
+        output_map = getattr(self, "output_map_", None)
+        if output_map is not None:
+            return np.asarray(output_map.predict_proba(np.asarray(proba, dtype=float)))
         if not getattr(self, "identity_kept_", False):
             return self.predict(proba)
         z = self.log_scores(proba)

@@ -1,0 +1,173 @@
+"""The map :class:`probwrap.PriorShiftWrapper` returns its probabilities through on small sets
+where the labelled rows contradict the model's confidence (the twenty-fourth session's rule).
+
+``BiasCorrectedScaling`` serves two purposes: the prior estimate (its class-wise biases make the
+mean calibrated posterior the class frequency, which EM needs) and the probabilities handed to
+the user (``predict_output``: the map, or the model's own where a likelihood-ratio test keeps
+them). On a few dozen labelled rows of a model whose probabilities reach nearer 0 and 1 than
+the rows can resolve (naive Bayes), a labelled row given less than the row bound for its own
+class shows that confidence is misplaced, while the map's prior on the scale (worth 5 rows,
+mode 1) holds the slope near the model's own and the floor flattens the most confident rows.
+There the probabilities returned are those of ``CalibrationWrapper(method="auto")`` fitted on
+the same held-out probabilities, choosing among the smooth maps (temperature, Platt and beta
+scaling: :data:`OUTPUT_MAP_CANDIDATES`) on folds fixed by the rows (:func:`output_map_folds`),
+so that the choice draws nothing at random and the Dask and Spark fits, which bring a small
+set's rows, make the in-memory choice. The prior estimate keeps ``BiasCorrectedScaling``. Measured in
+docs/prior_shift.md, "Before adapt on small labelled sets".
+"""
+
+from __future__ import annotations
+
+import warnings
+from typing import Any
+
+import numpy as np
+from sklearn.base import BaseEstimator, ClassifierMixin
+
+from .shift._calibration import _floor
+
+__all__ = ["OUTPUT_MAP_CANDIDATES", "OUTPUT_MAP_MAX_ROWS", "RESOLUTION_POWER",
+           "contradicted_confidence", "fit_output_map", "output_map_folds"]
+
+#: The rule applies up to this many held-out rows (counted as for the map's prior on the scale,
+#: worth 5 rows: at least 5 % of the rows here). Measured on 20-600 rows (docs/prior_shift.md,
+#: "Before adapt on small labelled sets"): at 150 rows of the twenty-third session's hunt it
+#: raised the geometric mean (0.8386 -> 0.8411 over the sigmoid), at 20-100 it lowered it.
+OUTPUT_MAP_MAX_ROWS = 100
+
+#: The rule needs the model to resolve probabilities below ``b ** RESOLUTION_POWER``, ``b`` the
+#: row bound (log-odds beyond twice the bound's). With ``b`` itself, on
+#: benchmarks/shift_calibration_tiny.py's 457 frozen draws (20 / 40 / 100 rows) 14 cells of
+#: logistic regression and boosting changed and 13 got worse (penguins' boosting on 20 rows
+#: 0.82 -> 0.94x the sigmoid; their geometric means 0.9303 -> 0.9325 and 0.9990 -> 1.0027), while
+#: every one of them had its smallest probability above ``b ** 1.82``; naive Bayes reaches far
+#: below (``b ** 2`` to ``b ** 110``). Measured in docs/prior_shift.md, "Before adapt on small
+#: labelled sets".
+RESOLUTION_POWER = 2.0
+
+#: The maps the output is chosen from: the smooth ones (one, two and three parameters on the
+#: log-odds). The step maps ``auto`` also scores where each class has 30 rows (histogram
+#: binning, isotonic regression, Venn-Abers) are left out: on scikit-learn's breast cancer with
+#: naive Bayes, 100 labelled rows (tests/test_prior_shift_tiny_tail.py's third draw), binning won
+#: the folds in 6 of 100 random fold draws and then gave 1.18x the flat floor's test log loss
+#: (temperature scaling, chosen in 93: 0.78x). Measured in docs/prior_shift.md, "Before adapt
+#: on small labelled sets".
+OUTPUT_MAP_CANDIDATES = ("temperature", "platt", "beta")
+
+#: Folds that score the candidates (fewer where the smaller class has fewer rows, at least 2).
+OUTPUT_MAP_FOLDS = 5
+
+
+class _GivenProbabilities(ClassifierMixin, BaseEstimator):
+    """A fitted "model" whose ``predict_proba`` returns its input: held-out probabilities
+    handed to :class:`probwrap.CalibrationWrapper` as a frozen model's outputs."""
+
+    def __init__(self, n_classes: int = 2) -> None:
+        self.n_classes = n_classes
+
+    def fit(self, X: Any = None, y: Any = None) -> _GivenProbabilities:
+        self.classes_ = np.arange(self.n_classes)
+        return self
+
+    def predict_proba(self, X: Any) -> np.ndarray:
+        return np.asarray(X, dtype=float)
+
+
+def contradicted_confidence(proba: np.ndarray, y_idx: np.ndarray, w: np.ndarray) -> str | None:
+    """Why the output map should be chosen by folds, or None.
+
+    Two classes, at most :data:`OUTPUT_MAP_MAX_ROWS` (100) held-out
+    rows (weights read as row frequencies, or Kish's effective size, as for the map's prior),
+    and probabilities far nearer 0 or 1 than the rows resolve: some held-out probability above
+    0 lies below the square of the row bound ``b = 1 / (4 (N + 1))`` (``b`` is half the map's
+    output floor, :func:`heldout_clip`'s bound; a forest's grid of multiples of
+    ``1 / n_trees`` does not reach it, and its exact 0 is its resolution; a logistic regression
+    or boosting whose probabilities pass ``b`` but not ``b ** 2`` was measured worse with the
+    map: :data:`RESOLUTION_POWER`). Then ``"confident miss"`` where a labelled row of weight > 0 got less than that bound for
+    its own class (but none exactly 0: underflowed probabilities).
+    """
+    from .calibration._base import count_weights
+
+    p = np.asarray(proba, dtype=float)
+    if p.ndim != 2 or p.shape[1] != 2:
+        return None
+    w = np.asarray(w, dtype=float)
+    with np.errstate(over="ignore"):
+        n_rows = float(count_weights(w)[0].sum())
+    if not 0.0 < n_rows <= OUTPUT_MAP_MAX_ROWS:
+        return None
+    keep = w > 0
+    bound = 0.5 * _floor(n_rows, 2)
+    positive = p[keep][p[keep] > 0]
+    if not (positive.size and float(positive.min()) < bound ** RESOLUTION_POWER):
+        return None
+    own = p[np.flatnonzero(keep), np.asarray(y_idx)[keep]]
+    if own.size and 0.0 < float(own.min()) < bound:
+        # (a row at exactly 0 for its own class: the probabilities have underflowed, and the
+        # maps chosen by folds see no order among them; measured worse, docs/prior_shift.md)
+        return "confident miss"
+    # (the model's own probabilities kept by the likelihood-ratio test while the map's scale is
+    # below 1 was measured too and is left alone: it breaks the guarantee for calibrated
+    # models on 20 rows, tests/test_prior_shift_safety.py; docs/prior_shift.md)
+    return None
+
+
+def output_map_folds(proba: np.ndarray, y_idx: np.ndarray, w: np.ndarray) -> list:
+    """Stratified folds fixed by the rows themselves, as ``(train, test)`` index pairs.
+
+    The rows of each class are ordered by their log-odds (then by weight) and dealt to the
+    folds in turn (systematic sampling: every fold holds a spread of scores of each class).
+    No random draw: the in-memory, Dask and Spark fits of the same rows — in any order — get
+    the same folds up to rows that are identical in score, class and weight (interchangeable),
+    whatever ``random_state`` is. With random folds the chosen map changed from one fit to the
+    next (breast cancer, naive Bayes, 60 rows: Platt scaling in one fit and temperature scaling
+    in the next, test probabilities 0.075 against 0.011).
+    """
+    p = np.asarray(proba, dtype=float)
+    y = np.asarray(y_idx)
+    w = np.asarray(w, dtype=float)
+    with np.errstate(divide="ignore"):
+        score = np.log(p[:, 1]) - np.log(p[:, 0])
+    counts = np.bincount(y[w > 0], minlength=2)
+    n_splits = int(min(OUTPUT_MAP_FOLDS, max(2, counts[counts > 0].min())))
+    fold = np.empty(y.shape[0], dtype=int)
+    for k in np.unique(y):
+        rows = np.flatnonzero(y == k)
+        order = rows[np.lexsort((w[rows], score[rows]))]
+        fold[order] = np.arange(order.shape[0]) % n_splits
+    everything = np.arange(y.shape[0])
+    return [(everything[fold != f], everything[fold == f]) for f in range(n_splits)]
+
+
+def fit_output_map(proba: np.ndarray, y_idx: np.ndarray, w: np.ndarray | None,
+                   random_state: Any, owner: str) -> Any:
+    """``CalibrationWrapper(method="auto")`` over the smooth maps
+    (:data:`OUTPUT_MAP_CANDIDATES`) on the folds of :func:`output_map_folds`, fitted on
+    held-out probabilities (a frozen "model" returning them), with ``w`` as its
+    ``sample_weight`` (None: unweighted). The choice draws nothing at random
+    (``random_state`` is passed on for the wrapper's record only). Its warnings are passed on,
+    named as the output calibration of ``owner``; a ``WeightScaleWarning`` is left to
+    ``owner``, which says the same about the same weights."""
+    from sklearn.frozen import FrozenEstimator
+
+    from ._calibration_wrapper import CalibrationWrapper
+    from .calibration import WeightScaleWarning
+
+    p = np.asarray(proba, dtype=float)
+    y = np.asarray(y_idx)
+    folds = output_map_folds(p, y, np.ones(y.shape[0]) if w is None else w)
+    model = FrozenEstimator(_GivenProbabilities(p.shape[1]).fit())
+    cw = CalibrationWrapper(model, method="auto", cv=folds, candidates=OUTPUT_MAP_CANDIDATES,
+                            random_state=random_state)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        if w is None:
+            cw.fit(p, y)
+        else:
+            cw.fit(p, y, sample_weight=w)
+    for item in caught:
+        if issubclass(item.category, (WeightScaleWarning, DeprecationWarning)):
+            continue
+        warnings.warn(f"{owner} (its output calibration, chosen by folds): {item.message}",
+                      item.category, stacklevel=4)
+    return cw
