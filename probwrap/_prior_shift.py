@@ -153,8 +153,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     models and not the refit one; the estimator's own probabilities with
     ``calibration=None``; of the refit model, or averaged over the fold models, see
     ``predict_with``; on at most 100 labelled rows of two classes where a row got a probability
-    for its own class below what the rows can resolve, the map ``CalibrationWrapper(method="auto")`` chooses among the smooth maps on
-    the same held-out probabilities and fixed folds, ``output_map_``), re-weighted to the prior in use,
+    for its own class below what the rows can resolve, from a model resolving far beyond it,
+    the map ``CalibrationWrapper(method="auto")`` chooses among the smooth maps on the same
+    held-out probabilities and fixed folds, ``output_map_``), re-weighted to the prior in use,
     ``applied_prior_``: ``target_prior`` when it is given; otherwise, after ``adapt``, the
     source prior moved toward the estimate ``target_prior_`` by the share the evidence
     supports, ``adaptation_weight_ = max(0, 1 - evidence_cutoff_ * (k - 1) / shift_statistic_)``
@@ -318,8 +319,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     output_map_ : CalibrationWrapper or None
         Set where ``fit`` had at most 100 labelled rows (weights read as row counts, or Kish's
         effective size) of two classes, the model gave some of them a probability above 0 but
-        below the row bound ``1 / (4 (N + 1))`` (near 0 or 1; a forest's grid of multiples of
-        ``1 / n_trees`` does not reach it), and a labelled row got less than that bound, but
+        below the square of the row bound ``b = 1 / (4 (N + 1))`` (near 0 or 1, as naive Bayes;
+        a forest's grid of multiples of ``1 / n_trees`` does not reach it, nor, on the
+        benchmarks, a logistic regression or boosting that passes ``b``), and a labelled row
+        got less than ``b``, but
         not exactly 0, for its own class (its confidence contradicted):
         ``CalibrationWrapper(method="auto")`` choosing among temperature, Platt and beta
         scaling on folds fixed by the rows (the same on Dask and Spark, drawn at no
@@ -699,8 +702,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
     def _choose_output_map(self, est: PriorEstimator, sample_weight: Any) -> None:
         """On at most 100 labelled rows of two classes, where the model gives probabilities
-        nearer 0 or 1 than the row bound ``1 / (4 (N + 1))`` and the labels contradict that
-        confidence — a row given less than the bound (but not exactly 0) for its own class —
+        nearer 0 or 1 than the square of the row bound ``1 / (4 (N + 1))`` and the labels
+        contradict that confidence — a row given less than the bound (but not exactly 0) for
+        its own class —
         ``predict_proba`` returns the probabilities of ``CalibrationWrapper(method="auto")``
         over the smooth maps, on folds fixed by the rows, fitted on the same held-out
         probabilities (``output_map_``;
