@@ -26,6 +26,7 @@ from ._heldout import (
     check_fitted,
     check_rows_match,
     is_frozen,
+    warn_weightless_classes,
 )
 from ._validation import (
     check_labels,
@@ -323,6 +324,8 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         check_rows_match(X, y_arr.shape[0])
         sw = check_sample_weight(sample_weight, y_arr.shape[0]) if sample_weight is not None else None
         y_index, classes = check_labels(y_arr, name="y")
+        if sw is not None:
+            warn_weightless_classes(self, classes, y_index, sw, stacklevel=3)
         if not hasattr(self.estimator, "predict_proba"):
             raise ValueError(
                 f"`estimator` ({type(self.estimator).__name__}) has no predict_proba; wrap it in "

@@ -458,6 +458,33 @@ def keep_cells_together(fold: np.ndarray, cells: np.ndarray) -> np.ndarray:
     return renumbered.ravel()
 
 
+def warn_weightless_classes(owner: Any, classes: np.ndarray, y_index: np.ndarray,
+                            sample_weight: np.ndarray, *, stacklevel: int) -> None:
+    """Warn naming the classes that have rows in ``y`` but only rows of ``sample_weight`` 0.
+
+    Such a class is absent for every fit (the model's, the maps', the cutoff search's) although
+    it stays among ``classes_``; a frozen model's class with no rows at all already gets the
+    warning of :meth:`_HeldOutMixin._fit_heldout`. Until session 25 rows of weight 0 kept it
+    silent: heplots' NeuroCog, 'Schizophrenia' weighted 0 in 80 rows, ``method="auto"`` chose
+    vector scaling (frozen) or temperature (cross-fitted) without a word while a named method
+    warned that no map could be fitted for the class.
+    """
+    rows = np.bincount(y_index, minlength=classes.shape[0])
+    weighted = np.bincount(y_index[sample_weight > 0], minlength=classes.shape[0])
+    weightless = np.flatnonzero((rows > 0) & (weighted == 0))
+    if not weightless.size:
+        return
+    names = ", ".join(repr(plain(classes[j])) for j in weightless[:5])
+    warnings.warn(
+        f"{type(owner).__name__}: every row of class(es) {names} in `y` has `sample_weight` 0, "
+        "so nothing fitted here learns or checks them (their probabilities follow the model "
+        "and the maps fitted on the other classes). Give those rows a positive weight, or "
+        "leave the class out.",
+        UserWarning,
+        stacklevel=stacklevel + 1,
+    )
+
+
 def is_frozen(estimator: Any) -> bool:
     """Whether ``estimator`` is an already-fitted :class:`~sklearn.frozen.FrozenEstimator`."""
     return isinstance(estimator, FrozenEstimator)
@@ -694,6 +721,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     "Only one class has a positive `sample_weight`; at least two classes must "
                     "carry weight."
                 )
+            warn_weightless_classes(self, classes, np.asarray(y_index), sw, stacklevel=3)
         values = np.asarray(values, dtype=float)
         if not np.all(np.isfinite(values)):
             raise ValueError(

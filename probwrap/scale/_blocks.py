@@ -151,7 +151,7 @@ def check_class_rows(owner: Any, classes: np.ndarray, rows: np.ndarray, weighted
                      *, absent_warning: bool = True) -> None:
     """The in-memory checks of a frozen model's held-out labels (``_fit_heldout``), from the rows
     of each class counted block by block: at least two classes (and two with positive weight),
-    and a warning naming the model's classes with no held-out rows."""
+    and a warning naming the model's classes with no held-out rows (or only rows of weight 0)."""
     from .._validation import plain
 
     if np.count_nonzero(rows) < 2:
@@ -171,6 +171,18 @@ def check_class_rows(owner: Any, classes: np.ndarray, rows: np.ndarray, weighted
             "rows in `y`; nothing fitted here is checked on them (their probabilities follow "
             "the model and the map fitted on the other classes). Hold out labelled rows of "
             "every class.",
+            UserWarning,
+            stacklevel=5,
+        )
+    weightless = np.flatnonzero((rows > 0) & (weighted == 0))
+    if absent_warning and weightless.size:
+        # as in memory (probwrap._heldout.warn_weightless_classes)
+        names = ", ".join(repr(plain(classes[j])) for j in weightless[:5])
+        warnings.warn(
+            f"{type(owner).__name__}: every row of class(es) {names} in `y` has "
+            "`sample_weight` 0, so nothing fitted here learns or checks them (their "
+            "probabilities follow the model and the maps fitted on the other classes). Give "
+            "those rows a positive weight, or leave the class out.",
             UserWarning,
             stacklevel=5,
         )
