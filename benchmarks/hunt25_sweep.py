@@ -31,8 +31,9 @@ setups ``cross`` (refit on the drawn rows), ``frozen`` (fitted once on a separat
 Run: ``nice python benchmarks/hunt25_sweep.py --quick`` (five sets, about four minutes on one
 core), ``nice python benchmarks/hunt25_sweep.py`` (every set, one draw: the table of
 ``docs/small_data.md``, the session-25 hunt), ``--sets lsat6,bwght2``, ``--modes frozen``,
-``--models nb``, ``--seeds 20``, ``--first-seed 0``, ``--csv FILE``, ``--list``.
-"""
+``--models nb``, ``--sizes 40``, ``--seeds 20``, ``--first-seed 1``, ``--no-weights``, ``--csv FILE``,
+``--from-csv A.csv,B.csv`` (the summary of saved cells, without refitting; with several seeds
+also the mean over the seeds and the paired difference from the sigmoid), ``--list``."""
 
 from __future__ import annotations
 
@@ -142,6 +143,27 @@ def tasks() -> list[H.Task]:
     return out
 
 
+def redraws(df: pd.DataFrame) -> None:
+    """Per set, model, setup and size over several seeds: the mean log loss (and mean cost) of
+    the wrapper and of the sigmoid, the ratio of the means and the mean paired difference with
+    its standard error, to tell a systematic excess from one unlucky draw."""
+    if df.empty or df["seed"].nunique() < 2:
+        return
+    print("\nover the seeds: wrapper, sigmoid, ratio of means, paired difference +- standard error, draws worse")
+    for keys, g in df.groupby(["set", "model", "mode", "n_cal"]):
+        parts = []
+        for a, b in (("cal", "sig"), ("cost_tuned", "cost_sig")):
+            if a not in g or b not in g:
+                continue
+            h = g[[a, b]].dropna()
+            if len(h) < 2:
+                continue
+            d = h[a] - h[b]
+            parts.append(f"{a.split('_')[0]} {h[a].mean():.3f} vs {h[b].mean():.3f} ({h[a].mean() / h[b].mean():.2f}x,"
+                         f" {d.mean():+.3f} +- {d.std(ddof=1) / np.sqrt(len(d)):.3f}, {int((d > 1e-12).sum())}/{len(d)})")
+        print(f"  {'/'.join(map(str, keys))}: " + "; ".join(parts))
+
+
 def main(argv: list[str]) -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--quick", action="store_true")
@@ -154,7 +176,13 @@ def main(argv: list[str]) -> None:
     ap.add_argument("--no-weights", action="store_true")
     ap.add_argument("--list", action="store_true")
     ap.add_argument("--csv", default="")
+    ap.add_argument("--from-csv", default="", help="summarise saved cells (with --csv's columns) without refitting")
     a = ap.parse_args(argv)
+    if a.from_csv:
+        df = pd.concat([pd.read_csv(f) for f in a.from_csv.split(",")], ignore_index=True)
+        B.summarise(df)
+        redraws(df)
+        return
     assert CalibrationWrapper().method == "auto"
     all_tasks = tasks()
     if a.list:
@@ -188,6 +216,7 @@ def main(argv: list[str]) -> None:
             pd.DataFrame(rec.rows).to_csv(a.csv, index=False)
     df = pd.DataFrame(rec.rows)
     B.summarise(df)
+    redraws(df)
     if a.csv:
         df.to_csv(a.csv, index=False)
     print(f"\n{len(rec.flags)} flags; {time.time() - t0:.0f} s")
