@@ -28,8 +28,8 @@ setups ``cross`` (refit on the drawn rows), ``frozen`` (fitted once on a separat
 ``CostPolicyWrapper(costs={"fp": 1, "fn": 4}, strategy="tuned")`` against scikit-learn's
 ``CalibratedClassifierCV(method="sigmoid")``, weights all one against all ``1 / n`` at 100 rows.
 
-Run: ``nice python benchmarks/hunt25_sweep.py --quick`` (five sets, about four minutes on one
-core), ``nice python benchmarks/hunt25_sweep.py`` (every set, one draw: the table of
+Run: ``nice python benchmarks/hunt25_sweep.py --quick`` (five sets, 120 cells: 332 s on the
+shared machine at a load of 8-20), ``nice python benchmarks/hunt25_sweep.py`` (every set, one draw: the table of
 ``docs/small_data.md``, the session-25 hunt), ``--sets lsat6,bwght2``, ``--modes frozen``,
 ``--models nb``, ``--sizes 40``, ``--seeds 20``, ``--first-seed 1``, ``--no-weights``, ``--csv FILE``,
 ``--from-csv A.csv,B.csv`` (the summary of saved cells, without refitting; with several seeds
