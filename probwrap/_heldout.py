@@ -139,6 +139,27 @@ def check_rows_match(X: Any, n: int) -> None:
         )
 
 
+#: what to do when the model's fit takes no ``sample_weight`` (e.g. a Pipeline)
+_ROUTING_ADVICE = (
+    "To weight the model's fit too, turn on scikit-learn's metadata routing "
+    "(sklearn.set_config(enable_metadata_routing=True)) and request the weights on the step "
+    "that takes them (e.g. LogisticRegression().set_fit_request(sample_weight=True))."
+)
+
+
+def _all_equal(sample_weight: Any) -> bool:
+    """Whether the weights weight nothing: all equal to 1, or all equal and below 1 (they sum
+    to less than the number of rows, so they count as Kish's effective size, one per row;
+    docs/weights.md). Equal whole numbers above 1 are row counts (weight 2: every row twice),
+    which a model fitted without them does not see."""
+    try:
+        w = np.asarray(sample_weight, dtype=float).ravel()
+    except (TypeError, ValueError):
+        return False
+    return (w.size > 0 and bool(np.all(w == w[0])) and bool(np.isfinite(w[0]))
+            and 0 < w[0] <= 1)
+
+
 class FoldScoringError(ValueError):
     """A fold model was fitted on its training part but refused that fold's held-out rows
     (``fold``: the fold's index; the message is the model's own)."""
@@ -546,18 +567,24 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         if sample_weight is not None:
             if has_fit_parameter(self.estimator, "sample_weight"):
                 params["sample_weight"] = sample_weight
+            elif _all_equal(sample_weight):
+                # weights of 1 (or all equal below 1, which count one row each) weight nothing:
+                # the model fitted without them is the model they ask for, so nothing is lost
+                # and there is nothing to warn about (on an ordinary scaler + logistic
+                # regression Pipeline every fit with weights of 1 warned)
+                pass
             elif weights_used_here is None:
                 warnings.warn(
                     f"`estimator` ({type(self.estimator).__name__}) does not accept "
                     "sample_weight; it is fitted without weights, and the weights are used only "
-                    "by the wrapper's own step.",
+                    f"by the wrapper's own step. {_ROUTING_ADVICE}",
                     UserWarning,
                     stacklevel=3,
                 )
             else:
                 warnings.warn(
                     f"`sample_weight` is ignored: `estimator` ({type(self.estimator).__name__}) "
-                    f"does not accept it, and {weights_used_here}.",
+                    f"does not accept it, and {weights_used_here}. {_ROUTING_ADVICE}",
                     UserWarning,
                     stacklevel=3,
                 )

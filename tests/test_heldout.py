@@ -113,8 +113,9 @@ def test_warns_when_estimator_ignores_weights():
         def fit(self, X, y):
             return super().fit(X, y)
 
-    with pytest.warns(UserWarning, match="does not accept sample_weight"):
-        Collect(NoWeights(), cv=3, random_state=0).fit(X, y, sample_weight=np.ones(len(y)))
+    w = np.where(np.arange(len(y)) % 2 == 0, 1.0, 2.0)
+    with pytest.warns(UserWarning, match="does not accept sample_weight.*metadata routing"):
+        Collect(NoWeights(), cv=3, random_state=0).fit(X, y, sample_weight=w)
 
 
 def test_metadata_routing_sends_weights_only_when_requested(cancer):
