@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numbers
+import re
 import warnings
 from typing import Any
 
@@ -267,6 +268,7 @@ def prior_by_batch(
     table = np.zeros(len(uniq), dtype=dtype)
     rng = check_random_state(estimator.random_state)
     conflicts: list[tuple[Any, str]] = []
+    others: dict[tuple[type, str], list[tuple[Any, str]]] = {}
     for row, b in enumerate(order):
         rows = inverse.ravel() == b
         with warnings.catch_warnings(record=True) as caught:
@@ -279,8 +281,9 @@ def prior_by_batch(
         for item in caught:
             if issubclass(item.category, PriorIntervalConflictWarning):
                 conflicts.append((uniq[b], str(item.message)))
-            else:  # every other warning as it came, from the caller's line
-                warnings.warn(item.message, item.category, stacklevel=3)
+            else:  # every other warning once per table, naming its batches (below)
+                key = (item.category, _NUMBERS.sub("#", str(item.message)))
+                others.setdefault(key, []).append((uniq[b], str(item.message)))
         interval = res.interval
         if interval is None:
             interval = np.column_stack([res.prior, res.prior])
@@ -299,7 +302,31 @@ def prior_by_batch(
         )
     if conflicts:
         _warn_conflicts(conflicts, len(order))
+    for (category, _), found in others.items():
+        _warn_batches(category, found, len(order))
     return table
+
+
+#: numbers in a warning's text: two batches' warnings that differ only in them are one kind
+_NUMBERS = re.compile(r"-?\d+(\.\d+)?(e[-+]?\d+)?")
+
+
+def _warn_batches(category: type, found: list[tuple[Any, str]], n_batches: int) -> None:
+    """A warning the estimate of some batches gave, once for the whole table: as it came when
+    one batch gave it; otherwise how many batches and which, then the first one's text (on
+    ordinary data, e.g. 1,300 labelled Titanic passengers monitored in batches of 130, one
+    ``monitor`` call gave the same warning once per batch, up to six times)."""
+    if len(found) == 1 and n_batches == 1:
+        warnings.warn(found[0][1], category, stacklevel=4)
+        return
+    names = ", ".join(str(plain(c[0])) for c in found[:5]) + (", ..." if len(found) > 5 else "")
+    first = found[0][1]
+    warnings.warn(
+        f"In {len(found)} of {n_batches} batches (batch {names}): first, "
+        f"batch {plain(found[0][0])}: " + first,
+        category,
+        stacklevel=4,
+    )
 
 
 def _warn_conflicts(conflicts: list[tuple[Any, str]], n_batches: int) -> None:
