@@ -114,13 +114,19 @@ class NoteLog:
 
     :meth:`compute` runs one computation with the warnings it raises recorded (narrowly: only
     inside that call), stores each distinct warning as a note about that number, and warns
-    once more with the number named, so that a caller of the report sees it too. Exceptions
+    once more with the number named, so that a caller of the report sees it too (once per
+    log: a kind of warning met again by a later computation is noted there, not warned again). Exceptions
     listed in ``expected`` become a note (and a ``UserWarning``) and ``None`` is returned; any
     other exception propagates.
     """
 
     def __init__(self) -> None:
         self.notes: list[ReportNote] = []
+        # kinds of warning already warned once more to the caller: another computation that
+        # meets the same kind (the slope and the intercept both clipping the same rows near 0
+        # or 1, on ordinary near-separated data such as AER's CreditCard) adds its note but
+        # does not warn again, so one report warns each kind once
+        self._warned: set[tuple[type, str]] = set()
 
     def add(self, key: str, about: str, kind: str, message: str, count: int = 1) -> None:
         self.notes.append(ReportNote(key, about, kind, message, count))
@@ -146,8 +152,11 @@ class NoteLog:
                 seen[k][1] += 1
             else:
                 seen[k] = [str(w.message), 1]
-        for (category, _), (message, count) in seen.items():
+        for (category, kind), (message, count) in seen.items():
             self.add(key, about, category.__name__, message, count)
+            if (category, kind) in self._warned:
+                continue
+            self._warned.add((category, kind))
             # the count is of times the warning was raised, not of rows: a bootstrap meets the
             # same row in many of its resamples
             more = (f" (raised {count} times in this computation (a bootstrap raises it in "
