@@ -692,7 +692,8 @@ class PriorEstimator(_Resampling):
             warnings.warn(
                 f"Only {n_units:.3g} effective unlabelled rows"
                 + ("" if cell_t is None else " (Kish's count over the cells' design effect)")
-                + "; the prior estimate is very uncertain and its interval is wide.",
+                + "; the prior estimate is very uncertain and its interval is wide: read "
+                "the interval, not the estimate, or pass more rows (larger batches).",
                 UserWarning,
                 stacklevel=2,
             )
