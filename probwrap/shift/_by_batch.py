@@ -282,7 +282,11 @@ def prior_by_batch(
             if issubclass(item.category, PriorIntervalConflictWarning):
                 conflicts.append((uniq[b], str(item.message)))
             else:  # every other warning once per table, naming its batches (below)
-                key = (item.category, _NUMBERS.sub("#", str(item.message)))
+                # a named class (BoundaryPriorWarning, ...) once whatever its wording (which
+                # names a class and a reason that vary by batch); a plain UserWarning once per
+                # message that differs only in its numbers
+                key = (item.category, _NUMBERS.sub("#", str(item.message))
+                       if item.category is UserWarning else "")
                 others.setdefault(key, []).append((uniq[b], str(item.message)))
         interval = res.interval
         if interval is None:
