@@ -461,6 +461,18 @@ def summarise(df: pd.DataFrame, crashes=(), skipped=()) -> None:
          "pvalue", "warn"]].to_string())
     print("warnings from adapt (cells):")
     print(df.warn.str.split(",").explode().value_counts().to_string())
+    print("per set: AUC range | cells | worst no-shift adapted/none (warned?) | no-shift > 1.02 "
+          "quiet | coverage | misses (quiet) | gm adapted/oracle on moved cells")
+    for name, g in df.groupby("set", sort=False):
+        no, mv = g[g.kind == "x1"], g[g.kind != "x1"]
+        top = no.loc[no.r_none.idxmax()]
+        c = g.cover.dropna().astype(bool)
+        miss = g[g.cover.notna() & ~g.cover.astype(bool)]
+        print(f"| {name} | {g.auc.min():.2f}-{g.auc.max():.2f} | {len(g)} | "
+              f"{top.r_none:.3f} ({'warned' if top.warn else 'quiet'}) | "
+              f"{int(((no.r_none > 1.02) & (no.warn == '')).sum())} | {c.mean():.1%} | "
+              f"{len(miss)} ({int((miss.warn == '').sum())}) | "
+              f"{np.exp(np.log(mv.r_oracle).mean()):.3f} |")
 
 
 def main() -> None:
