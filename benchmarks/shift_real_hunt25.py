@@ -47,8 +47,9 @@ Run: nice python benchmarks/shift_real_hunt25.py [--seeds 2] [--sets NAME ...] [
      nice python benchmarks/shift_real_hunt25.py --quick     (seed 0, 60 and 200 labelled rows,
                                                                logistic regression and forest)
      nice python benchmarks/shift_real_hunt25.py --summary FILE.csv
-(``--seeds 2``: about 40 minutes on a loaded machine as two processes splitting ``--sets``; the
-CSV is written after every set. Results: docs/prior_shift.md, "The session-25 hunt".)
+(``--seeds 2``: 3,192 cells, about 55 minutes as five processes splitting ``--sets`` on a machine
+at load 25; the CSV is written after every set. Results: docs/prior_shift.md, "The session-25
+hunt".)
 """
 
 from __future__ import annotations
