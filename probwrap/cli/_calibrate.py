@@ -199,7 +199,8 @@ def _fit(args: argparse.Namespace) -> int:
             weights = given
         if given is not None:  # rows of weight 0 are not counted
             closed = closed & (given > 0)
-        check_row_count("calibrate", scores.shape[0], args.scores)
+        check_row_count("calibrate", scores.shape[0], args.scores, sample_weight=given,
+                        counted="the choice between maps (--method auto) counts")
         check_ranking("calibrate", scores[closed], y[closed], labels, args.scores,
                       sample_weight=None if weights is None else weights[closed])
         counts = np.bincount(y[closed], minlength=2)

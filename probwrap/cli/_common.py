@@ -259,14 +259,30 @@ def check_ranking(
     return auc
 
 
-def check_row_count(verb: str, n_rows: int, path: str | Path, what: str = "rows") -> None:
-    """Warn when a file has fewer than :data:`FEW_ROWS` rows (intervals and tests unreliable)."""
+def check_row_count(verb: str, n_rows: int, path: str | Path, what: str = "rows",
+                    sample_weight: np.ndarray | None = None,
+                    counted: str = "the intervals count") -> None:
+    """Warn when a file has fewer than :data:`FEW_ROWS` rows (intervals and tests unreliable).
+
+    With whole-number weights summing to :data:`FEW_ROWS` or more (a table of counts), the
+    warning says what to do: the parts named by ``counted`` (the verb's intervals, its choice
+    between maps or its test) count the file's rows (or Kish's effective number), never the
+    weights' sum, so counted rows must be repeated to be counted there.
+    """
     if n_rows < FEW_ROWS:
-        warn_line(
-            verb,
-            f"{path}: only {n_rows} {what}; with fewer than {FEW_ROWS} (common practice) "
-            "intervals, tests and fitted maps are unreliable",
-        )
+        message = (f"{path}: only {n_rows} {what}; with fewer than {FEW_ROWS} (common practice) "
+                   "intervals, tests and fitted maps are unreliable")
+        if sample_weight is not None:
+            w = np.asarray(sample_weight, dtype=float)
+            total = float(w.sum())
+            if total >= FEW_ROWS and np.all(w == np.round(w)):
+                message += (
+                    f". The weights sum to {total:.0f}, but {counted} the file's {n_rows} "
+                    f"{what} (Kish's effective number when the weights vary), not the weights; "
+                    "if each weight counts identical rows, repeat each row that many times to "
+                    "have them counted"
+                )
+        warn_line(verb, message)
 
 # -- shared flags --------------------------------------------------------------------------------
 def whole_number(minimum: int, *, or_zero: bool = False):

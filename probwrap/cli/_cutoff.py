@@ -421,7 +421,8 @@ def _run(args: argparse.Namespace) -> int:
             weights = given
         if given is not None:  # rows of weight 0 are not judged
             closed = closed & (given > 0)
-        check_row_count("cutoff", scores.shape[0], args.scores)
+        check_row_count("cutoff", scores.shape[0], args.scores, sample_weight=given,
+                        counted="the bootstrap interval and the exact-test range count")
         check_ranking("cutoff", scores[closed], y[closed], labels, args.scores,
                       sample_weight=None if weights is None else weights[closed])
         costs = {"tp": args.cost_tp, "fp": args.cost_fp, "fn": args.cost_fn, "tn": args.cost_tn}

@@ -406,9 +406,13 @@ def _run(args: argparse.Namespace) -> int:
             if args.reference_cell_column is not None:
                 ref_settings["reference_cells"] = _cells(ref, args.reference_cell_column,
                                                          args.reference, "--reference-cell-column")
-        check_row_count("prevalence", proba.shape[0], args.unlabelled, "unlabelled rows")
+        check_row_count("prevalence", proba.shape[0], args.unlabelled, "unlabelled rows",
+                        sample_weight=weights,
+                        counted="the interval and the test of no shift count")
         if args.reference is not None:
-            check_row_count("prevalence", ref_scores.shape[0], args.reference, "reference rows")
+            check_row_count("prevalence", ref_scores.shape[0], args.reference, "reference rows",
+                            sample_weight=ref_weights,
+                            counted="the interval and the test of no shift count")
             judged = np.ones(ref_y.shape[0], bool) if ref_weights is None else ref_weights > 0
             check_ranking("prevalence", ref_scores[judged], ref_y[judged], labels,
                           args.reference,

@@ -313,7 +313,8 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
             uframe = read_table(args.unlabelled, exact=columns, text=_unlabelled_text(args))
             q = probabilities(args.unlabelled, uframe)
             _unlabelled_cells(args, uframe, unlabelled_cells)
-        check_row_count("report", P.shape[0], args.scores, "labelled rows")
+        check_row_count("report", P.shape[0], args.scores, "labelled rows",
+                        sample_weight=given)
         # rows of weight 0 are not judged
         _check_class_rows(y if given is None else y[given > 0], columns, args.scores)
         if q is not None:
@@ -697,7 +698,8 @@ def _handler(args: argparse.Namespace) -> int:
                             flag="--unlabelled-score-column" if args.unlabelled_score_column
                             else "--score-column")
             _unlabelled_cells(args, uframe, extra_cells)
-        check_row_count("report", p.shape[0], args.scores, "labelled rows")
+        check_row_count("report", p.shape[0], args.scores, "labelled rows",
+                        sample_weight=given)
         if q is not None:
             check_row_count("report", q.shape[0], args.unlabelled, "unlabelled rows")
             if args.batch_size is not None and args.batch_size >= q.shape[0]:
