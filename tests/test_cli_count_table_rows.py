@@ -95,3 +95,19 @@ def test_weights_that_are_not_counts_keep_the_plain_warning(tmp_path, capsys, ta
     assert code == 0
     few = [line for line in err.splitlines() if "only 24 rows" in line]
     assert len(few) == 1 and few[0].endswith("fitted maps are unreliable")
+
+
+def test_calibrate_lines_up_every_candidate(tmp_path, capsys, table):
+    # "class_shares" is one character longer than the names the column was sized for: its loss
+    # used to start one column to the right of every other candidate's (session 25)
+    counts = tmp_path / "counts.csv"
+    table.to_csv(counts, index=False)
+    code, out, _ = run(capsys, "calibrate", "fit", "--scores", counts, *COMMON,
+                       "--weight-column", "Freq", "--out", tmp_path / "m.json")
+    assert code == 0
+    lines = out.splitlines()
+    head = next(i for i, line in enumerate(lines) if line.lstrip().startswith("candidate"))
+    rows = [line for line in lines[head + 1:] if line.startswith("  ")]
+    assert any(line.split()[0] == "class_shares" for line in rows)
+    starts = {line.index(line.split()[1]) for line in rows}  # the loss or "no loss:"
+    assert starts == {lines[head].index("cross-validated")}

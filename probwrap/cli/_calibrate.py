@@ -279,23 +279,25 @@ def _print_candidates(wrapper: Any, echo: Any = None) -> None:
     print_ = functools.partial(print, file=echo or sys.stdout)
     notes = {name: clean(" ".join(str(note).split()))
              for name, note in wrapper.method_notes_.items()}
+    # one column for the names, as wide as the longest ("class_shares" is 12 characters)
+    width = max([11, *(len(str(name)) for name in (*wrapper.method_scores_, *notes))])
     if wrapper.method_scores_:
         # the standard error is that of each candidate's difference from the best one (so the
         # best one has none): printing it as "+-" read as the uncertainty of the loss itself
-        print_("  candidate   cross-validated log loss   (standard error of the difference "
-               "from the lowest)")
+        print_(f"  {'candidate':<{width}} cross-validated log loss   (standard error of the "
+               "difference from the lowest)")
         for name, (loss, se) in sorted(wrapper.method_scores_.items(), key=lambda kv: kv[1][0]):
             mark = "  <- chosen" if name == wrapper.method_ else ""
             gap = "lowest" if se == 0.0 else f"{se:.5f}"
-            print_(f"  {name:<11} {loss:.5f}   ({gap}){mark}")
+            print_(f"  {name:<{width}} {loss:.5f}   ({gap}){mark}")
     for name, note in notes.items():
         if name == "auto":
             continue
         if name in wrapper.method_scores_:  # scored, then set aside (e.g. a boundary)
-            print_(f"  {name:<11} {note}")
+            print_(f"  {name:<{width}} {note}")
         else:
             mark = "  <- chosen" if name == wrapper.method_ else ""
-            print_(f"  {name:<11} no loss: {note}{mark}")
+            print_(f"  {name:<{width}} no loss: {note}{mark}")
     if "auto" in notes:
         print_(f"  note: {notes['auto']}")
 
