@@ -565,6 +565,9 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             return dict(routed.estimator.fit), dict(routed.splitter.split)
         params = dict(fit_params)
         if sample_weight is not None:
+            # weights passed to a step by name (``logisticregression__sample_weight`` for a
+            # Pipeline) do reach the model: no warning that it is fitted without them
+            by_step = any(str(key).endswith("__sample_weight") for key in params)
             if has_fit_parameter(self.estimator, "sample_weight"):
                 params["sample_weight"] = sample_weight
             elif _all_equal(sample_weight):
@@ -573,22 +576,40 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                 # and there is nothing to warn about (on an ordinary scaler + logistic
                 # regression Pipeline every fit with weights of 1 warned)
                 pass
+            elif by_step:
+                pass
             elif weights_used_here is None:
                 warnings.warn(
                     f"`estimator` ({type(self.estimator).__name__}) does not accept "
                     "sample_weight; it is fitted without weights, and the weights are used only "
-                    f"by the wrapper's own step. {_ROUTING_ADVICE}",
+                    f"by the wrapper's own step.{self._weights_advice()}",
                     UserWarning,
                     stacklevel=3,
                 )
             else:
                 warnings.warn(
                     f"`sample_weight` is ignored: `estimator` ({type(self.estimator).__name__}) "
-                    f"does not accept it, and {weights_used_here}. {_ROUTING_ADVICE}",
+                    f"does not accept it, and {weights_used_here}.{self._weights_advice()}",
                     UserWarning,
                     stacklevel=3,
                 )
         return params, {}
+
+    def _weights_advice(self) -> str:
+        """How to weight the model's own fit too: by the Pipeline's final step's name where
+        that works, else through scikit-learn's metadata routing."""
+        return self._step_weights_hint() or " " + _ROUTING_ADVICE
+
+    def _step_weights_hint(self) -> str:
+        """What to pass so that a Pipeline's final step is weighted too ('' otherwise)."""
+        steps = getattr(self.estimator, "steps", None)
+        if not steps:
+            return ""
+        name, last = steps[-1]
+        if last is None or last == "passthrough" or not has_fit_parameter(last, "sample_weight"):
+            return ""
+        return (f" To weight the model too, pass the weights to its final step by name as well: "
+                f"fit(X, y, sample_weight=w, {name}__sample_weight=w).")
 
     def _fit_heldout(
         self,
