@@ -68,6 +68,9 @@ from ._progress import Stages
 from ._promise_flags import add_alarm_flags, alarm_settings
 from ._tables import read_labels, read_table, read_weights
 
+#: Level at which the note under the estimate calls the test's result a shift (common practice).
+SHIFT_LEVEL = 0.05
+
 __all__ = ["register", "prevalence_from_source", "prevalence_from_reference", "batch_alarm_json"]
 
 
@@ -297,9 +300,16 @@ def _text(out: dict[str, Any], path: str, level: float) -> str:
         f"p-value {out['shift_pvalue']:.3g}",
     ]
     if held_toward_source(out):
+        if out["shift_pvalue"] < SHIFT_LEVEL:
+            # "for lack of evidence" beside a test that finds a shift read as a contradiction:
+            # the pull answers how little the rows say about the share, not whether it moved
+            why = (f"({out['pseudo_rows']:g} pseudo-rows) although the test finds a shift: the "
+                   "rows carry too little information to place the prevalence alone")
+        else:
+            why = f"for lack of evidence ({out['pseudo_rows']:g} pseudo-rows)"
         lines.append(
-            f"  note: held toward the source prevalence for lack of evidence ({out['pseudo_rows']:g} "
-            f"pseudo-rows); the rows alone give {out['ml_prevalence']:.4f}, inside the interval")
+            f"  note: held toward the source prevalence {why}; the rows alone give "
+            f"{out['ml_prevalence']:.4f}, inside the interval")
     if not out["converged"]:
         lines.append("  note: the estimate's iterations did not converge; treat it with care")
     if "alarm" in out:
