@@ -176,6 +176,7 @@ def alarm_on_scores(
             f"at least {runs.exact_baseline:.0f} with that probability. Label more rows or use "
             "smaller batches."
         )
+        shared_note = len(notes) - 1
     detect = None
     se_ref = None
     if baseline_standard_error is not None and np.isfinite(baseline_standard_error) and (
@@ -198,6 +199,13 @@ def alarm_on_scores(
                 f"{SLOW_DETECTION:.0f} batches, our rule of thumb); within a few batches "
                 "it catches only larger moves."
             )
+            if share > SHARED_ERROR_LIMIT:
+                # "use smaller batches" beside "the batches are small for the chart" left the
+                # reader no way to follow both: smaller batches would slow the chart further
+                notes[shared_note] = notes[shared_note].replace(
+                    "Label more rows or use smaller batches.",
+                    "Label more rows (smaller batches would lower this share but, as the note on "
+                    "the batches says, they are already small for the chart).")
     first = labels[int(res.alarms[0])] if res.alarms.size else None
     return BatchAlarm(
         result=res, batches=list(labels), first_batch=first,
