@@ -597,8 +597,13 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
 
     def _weights_advice(self) -> str:
         """How to weight the model's own fit too: by the Pipeline's final step's name where
-        that works, else through scikit-learn's metadata routing."""
-        return self._step_weights_hint() or " " + _ROUTING_ADVICE
+        that works, and through scikit-learn's metadata routing."""
+        hint = self._step_weights_hint()
+        if not hint:
+            return " " + _ROUTING_ADVICE
+        return (hint + " Or turn on scikit-learn's metadata routing "
+                "(sklearn.set_config(enable_metadata_routing=True)) and request the weights on "
+                "that step (set_fit_request(sample_weight=True)).")
 
     def _step_weights_hint(self) -> str:
         """What to pass so that a Pipeline's final step is weighted too ('' otherwise)."""
