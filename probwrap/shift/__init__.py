@@ -33,12 +33,15 @@ from ._estimate import (
 )
 from ._estimator import CALIBRATIONS, INTERVALS, PRIOR_METHODS, PriorEstimator
 from ._interval import bca_interval, jackknife_acceleration, score_interval
+from ._mixture_fit import ClassMixtureMisfitWarning, class_mixture_misfit
 from ._repeats import RepeatedRowsWarning
 from ._shift_tests import NoShiftHarmWarning, ShiftTestResult, shift_score_test, shift_test
 
 __all__ = [
     "BiasCorrectedScaling",
     "BoundaryPriorWarning",
+    "ClassMixtureMisfitWarning",
+    "class_mixture_misfit",
     "PriorIntervalConflictWarning",
     "FewLabelledRowsWarning",
     "ImprecisePriorWarning",

@@ -100,6 +100,12 @@ class PriorEstimate:
         The first- over second-order harm of a move on rows whose class shares are exactly the
         source's (:func:`~probwrap.shift._shift_tests.null_move_ratio`); None where it was not
         computed.
+    mixture_misfit_pvalue : float or None
+        Two classes: the p-value of :func:`~probwrap.shift.class_mixture_misfit`, whether the
+        unlabelled rows' calibrated scores follow some mixture of the labelled classes' (below
+        1 % a :class:`~probwrap.shift.ClassMixtureMisfitWarning`; since 5 December 2026). None
+        with more than two classes, with cells, for rows not at hand, or with fewer than 15
+        effective rows in the batch or in a labelled class.
     """
 
     prior: np.ndarray
@@ -119,6 +125,7 @@ class PriorEstimate:
     pseudo_rows: float | None = None
     null_move_ratio: float | None = None
     all_shares_interval: np.ndarray | None = None
+    mixture_misfit_pvalue: float | None = None
 
 
 

@@ -43,6 +43,7 @@ from ._estimate import (
     unlabelled_share,
 )
 from ._interval import fold_shares, score_interval
+from ._mixture_fit import MIXTURE_MISFIT_LEVEL, ClassMixtureMisfitWarning, class_mixture_misfit
 from ._resample import (  # noqa: F401  (_interval_from_draws: imported from here elsewhere)
     _interval_from_draws,
     _Resampling,
@@ -717,6 +718,7 @@ class PriorEstimator(_Resampling):
             _warn_empty_columns(we @ pe, "predicted probability mass", self._names())
             ml = _solve_prior(pe, we, src, point.prior if np.all(point.prior > 0) else src,
                               float(self.tol), int(self.max_iter))[0]
+        misfit = self._mixture_misfit(pe, we, n_eff, cell_t, cell_s, moments)
         u_t = _score_rows(p, src)
         if refit is not None:
             # a model refit on the labelled rows: the unlabelled rows' scores averaged over the
@@ -918,7 +920,38 @@ class PriorEstimator(_Resampling):
             pseudo_rows=pseudo,
             null_move_ratio=move_ratio,
             all_shares_interval=joint,
+            mixture_misfit_pvalue=misfit,
         )
+
+    def _mixture_misfit(self, pe: np.ndarray, we: np.ndarray, n_eff: float, cell_t: Any,
+                        cell_s: Any, moments: Any) -> float | None:
+        """Two classes: the p-value of :func:`class_mixture_misfit` (do the unlabelled rows'
+        calibrated scores ``pe``, weights ``we``, follow some mixture of the labelled classes'?)
+        and a :class:`ClassMixtureMisfitWarning` below ``MIXTURE_MISFIT_LEVEL``. None (no
+        check) with more than two classes, with cells on either side (the bins' variance would
+        need the cells' clustering), with rows not at hand or labelled rows kept as a tally."""
+        source = self._source_rows()
+        if (self.n_classes_ != 2 or source is None or cell_t is not None or cell_s is not None
+                or moments is not None or self._source_row_counts() is not None):
+            return None
+        found = class_mixture_misfit(pe[:, 1], self.calibrate(source[0])[:, 1], source[1],
+                                     sample_weight=we, source_sample_weight=source[2],
+                                     effective_rows=n_eff)
+        if found is None:
+            return None
+        stat, pvalue, share, bins = found
+        if pvalue < MIXTURE_MISFIT_LEVEL:
+            warnings.warn(
+                f"The unlabelled rows' scores fit no mixture of the labelled classes' scores "
+                f"(counted in {bins} bins, the closest mixture at a share of {share:.2f} for "
+                f"{name_classes(1, self._names())}: p = {pvalue:.2g}). Within a class the rows "
+                "differ from the labelled ones, not only in the class shares (rows from one "
+                "subgroup or source?); the prior-shift assumption probably fails, and the "
+                "estimate and its interval can be far off without knowing it.",
+                ClassMixtureMisfitWarning,
+                stacklevel=3,
+            )
+        return pvalue
 
     @staticmethod
     def _estimating_rows(fold_calibrated: np.ndarray, share: np.ndarray, w: np.ndarray,
