@@ -219,16 +219,24 @@ def warn_repeated_scores(est: Any, proba: np.ndarray, ref_proba: np.ndarray, ref
     without resamples (``est.n_resamples == 0``, as the wrapper). By batch, the warning of each
     batch is shown once with how many more batches had it (``_by_batch``)."""
     from probwrap.shift._repeats import (
+        REFERENCE_MODELS,
         RepeatedRowsWarning,
         labelled_clumps,
         labelled_repeat_counts,
         repeats_of_rows,
         rows_repeat_message,
+        scored_by_other_models,
+        within_model_counts,
     )
 
     ref = two_columns(ref_proba)
     y = np.asarray(ref_y).astype(int)
     counts = (*labelled_repeat_counts(ref, y, 2), *labelled_clumps(ref, y, 2))
+    if scored_by_other_models(ref_proba, proba):
+        # out-of-fold reference scores: they tie only within a fold, so their rate of ties is
+        # read over the pairs of one fold (before 5 December 2026, session 25, over all pairs:
+        # a warning on every draw of coarse scores such as carData Cowles and TitanicSurvival)
+        counts = within_model_counts(counts, REFERENCE_MODELS)
     found = repeats_of_rows(est, counts, two_columns(proba), None, sample_weight)
     if found is None:
         return
