@@ -38,7 +38,9 @@ give identical posteriors) or else of its posteriors, and the engine counts the 
 the weights of each key by a shuffle (:func:`key_tallies` on each share of the keys), so only
 five numbers per share reach the client and every set is judged, not only sets of at most
 20,000 rows (since 5 December 2026, session 25). Scores read from files are grouped by their
-scores alone (they are all the file gives).
+scores alone (they are all the file gives); a reference file of out-of-fold scores, which meets
+none of the unlabelled rows' repeated scores, has its ties read over one fold's pairs
+(:func:`scored_by_other_models`, :func:`within_model_counts`; since 5 December 2026, session 25).
 """
 
 from __future__ import annotations
