@@ -462,7 +462,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
                 self.calibrator_ = self._fit_map(template, scores, ho.y_index, w)
             except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
                 raise ValueError(
-                    f"CalibrationWrapper(method={plain(self.method_)!r}): the map could not be "
+                    f"CalibrationWrapper({self._method_asked()}): the map could not be "
                     f"fitted on the {len(ho.y_index)} held-out rows: {exc}"
                 ) from exc
         if self.method == "auto":
@@ -697,16 +697,21 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
                 f"{plain(self.classes_[c])!r}: {int(counts[c])} row{'s' if counts[c] > 1 else ''}"
                 for c in few
             )
-            how = (f"method='auto', chose {plain(self.method_)!r}" if self.method == "auto"
-                   else f"method={plain(self.method_)!r}")
             warnings.warn(
-                f"CalibrationWrapper({how}): class(es) with fewer than "
+                f"CalibrationWrapper({self._method_asked()}): class(es) with fewer than "
                 f"{FEW_CLASS_ROWS} held-out rows ({listed}); the map's part for them rests on "
                 "those rows and its regularisation, so their calibrated probabilities are "
                 "uncertain. Hold out more labelled rows of the class(es) named.",
                 FewClassRowsWarning,
                 stacklevel=3,
             )
+
+    def _method_asked(self) -> str:
+        """The method as the user asked for it, for warnings: ``method='auto', chose 'platt'``
+        when ``auto`` chose, else ``method='platt'``."""
+        if isinstance(self.method, str) and self.method == "auto":
+            return f"method='auto', chose {plain(self.method_)!r}"
+        return f"method={plain(self.method_)!r}"
 
     def _count_scale_weights(self, w: np.ndarray) -> np.ndarray:
         """Weights as row counts for the maps (see ``docs/calibration.md``, "Weights")."""
@@ -946,7 +951,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
 
         for k, slope in held:
             warnings.warn(
-                f"CalibrationWrapper(method={plain(self.method_)!r}): the fold models' "
+                f"CalibrationWrapper({self._method_asked()}): the fold models' "
                 f"held-out scores run against the labels{where(k)} (Platt slope {slope:.3g} on "
                 f"{n_rows} held-out rows), so they show no usable order; the map gives every "
                 f"row the same probability, {float(maps[k].predict(np.zeros(1))[0]):.3g}, "
@@ -957,7 +962,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             )
         for k, slope in falling:
             warnings.warn(
-                f"CalibrationWrapper(method={plain(self.method_)!r}): the map decreases{where(k)} "
+                f"CalibrationWrapper({self._method_asked()}): the map decreases{where(k)} "
                 f"(Platt slope {slope:.3g} on {n_rows} held-out rows): the model's higher scores "
                 "get lower probabilities. Check that the model and the labels match (the same "
                 "positive class).",
