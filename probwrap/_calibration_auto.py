@@ -239,6 +239,15 @@ _PASS_OVER_TEMPERATURE_OFF_BASE_RATE = True
 #: switches the rule off.
 _PASS_OVER_TEMPERATURE_AFTER_PLATT = True
 
+#: Two classes, a frozen model: the one-standard-error rule passes over Platt scaling when,
+#: fitted on all held-out rows, its slope is negative (the map decreases: higher scores get
+#: lower probabilities) and its cross-validated log loss is not lower than that of another
+#: eligible map (all of which are non-decreasing) by more than the standard error of their
+#: paired difference; the rule goes on to the next map in its order. Such a map is kept (with
+#: a warning) only when the folds show the reversal beyond their noise. ``False`` switches the
+#: rule off. Measured in docs/calibration.md (the bullet on decreasing maps).
+_PASS_OVER_DECREASING_PLATT = True
+
 
 def _boundary_of(cal: Any) -> str | None:
     """Why a fitted map (or any map of a one-vs-rest list) sits at a boundary, or None."""
@@ -648,6 +657,7 @@ class _AutoChoice:
         vector_first = (not binary and ho.n_folds > 0
                         and n_rows >= _VECTOR_FIRST_CROSSFIT_MIN_ROWS)
         platt_beyond = False  # Platt scaling tried and passed over for its score
+        decreasing_passed = False  # a decreasing Platt map passed over for a later map
         for name in self._simplicity_order(eligible, platt_first, vector_first):
             loss, se = scores_out[name]
             if (name == "temperature" and name != best
@@ -665,6 +675,11 @@ class _AutoChoice:
                 notes[name] = text if name not in notes else notes[name] + "; " + text
                 continue
             platt_beyond = platt_beyond or (name == "platt" and loss - means[best] > se)
+            if (name == "platt" and binary and ho.n_folds == 0 and loss - means[best] <= se
+                    and self._platt_decreasing_by_little(eligible, losses, means, paired_se,
+                                                         scores, y, w, notes)):
+                decreasing_passed = True
+                continue
             if loss - means[best] <= se:
                 if (name == "temperature" and binary and name != best
                         and (_PASS_OVER_TEMPERATURE_OFF_BASE_RATE or (
@@ -673,6 +688,10 @@ class _AutoChoice:
                         and self._temperature_off_base_rate(scores, y, w, notes, best, means)):
                     continue  # to the next map in order: Platt scaling when within an error
                 return name, scores_out, notes
+        if decreasing_passed:
+            # no later map was kept after all: Platt's map, within a standard error, stays
+            notes["platt"] += "; kept all the same: no later map in the order was kept"
+            return "platt", scores_out, notes
         fallback = self._fallback_name(names, binary)
         reason = (
             "no candidate map could be scored and used: "
@@ -714,6 +733,40 @@ class _AutoChoice:
         )
         notes["temperature"] = text if "temperature" not in notes else (
             notes["temperature"] + "; " + text)
+        return True
+
+    def _platt_decreasing_by_little(self, eligible, losses, means, paired_se, scores, y, w,
+                                    notes) -> bool:
+        """True (and noted) when the one-standard-error rule passes over Platt scaling: see
+        ``_PASS_OVER_DECREASING_PLATT``. ``losses`` and ``means`` are the candidates' per-row
+        and mean cross-validated log losses, ``paired_se(a, b)`` the standard error of a paired
+        difference; ``scores``, ``y`` and ``w`` the binary rows ``auto`` scored."""
+        others = [nm for nm in eligible if nm != "platt"]
+        if not (_PASS_OVER_DECREASING_PLATT and scores.ndim == 1 and others):
+            return False
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                cal = self._fit_map(PlattMap(), scores, y, w)
+            except (ValueError, FloatingPointError, np.linalg.LinAlgError):
+                return False
+        slope = float(getattr(cal, "slope_", 0.0))
+        if not slope < 0.0:
+            return False
+        margin = {nm: (means[nm] - means["platt"], paired_se(losses[nm], losses["platt"]))
+                  for nm in others}
+        close = [nm for nm, (d, se) in margin.items() if d <= se]
+        if not close:
+            return False
+        nm = min(close, key=means.get)
+        text = (
+            f"passed over by the one-standard-error rule: fitted on all held-out rows its slope "
+            f"is {slope:.3g} (the map decreases: higher scores get lower probabilities), and its "
+            f"cross-validated log loss {means['platt']:.4g} is not lower than the non-decreasing "
+            f"{plain(nm)!r}'s {means[nm]:.4g} by more than the standard error of the difference "
+            f"({margin[nm][1]:.3g})"
+        )
+        notes["platt"] = text if "platt" not in notes else notes["platt"] + "; " + text
         return True
 
     def _temperature_short_of_shares(self, means, scores, y, w, notes) -> bool:
