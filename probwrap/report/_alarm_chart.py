@@ -128,6 +128,28 @@ def baseline_batch_standard_error(estimator: Any, batch_rows: float, *,
     return se if np.isfinite(se) and se > 0 else None
 
 
+#: How the note on the labelled rows' shared error ends, and how it ends beside the note that
+#: the batches are already small for the chart (smaller batches would slow the chart further).
+SHARED_ADVICE = "Label more rows or use smaller batches."
+SHARED_ADVICE_SLOW = ("Label more rows (smaller batches would lower this share but, as the note "
+                      "on the batches says, they are already small for the chart).")
+#: The start of the note that the batches are small for the chart.
+SLOW_NOTE_START = "the batches are small for the chart"
+
+
+def same_batch_advice(alarms: dict) -> dict:
+    """Alarms on the same batches (one per class) with one piece of advice: where any chart's
+    batches are small for it, every chart's note on the shared error stops advising smaller
+    batches (they are the same batches), so the classes' notes stay one note."""
+    import dataclasses
+
+    if not any(w.startswith(SLOW_NOTE_START) for a in alarms.values() for w in a.warnings):
+        return alarms
+    return {j: dataclasses.replace(a, warnings=tuple(w.replace(SHARED_ADVICE, SHARED_ADVICE_SLOW)
+                                                     for w in a.warnings))
+            for j, a in alarms.items()}
+
+
 def alarm_on_scores(
     scores: np.ndarray,
     labels: list[str],
@@ -173,8 +195,7 @@ def alarm_on_scores(
             f"of thumb): the chart's in-control run length is not {runs.exact_baseline:.0f} "
             f"batches but, with probability {probability:g} over the labelled rows, at least "
             f"{runs.assured:.0f} (median {runs.median:.0f}); h = {assured_h:.3g} would keep it "
-            f"at least {runs.exact_baseline:.0f} with that probability. Label more rows or use "
-            "smaller batches."
+            f"at least {runs.exact_baseline:.0f} with that probability. {SHARED_ADVICE}"
         )
         shared_note = len(notes) - 1
     detect = None
@@ -202,10 +223,7 @@ def alarm_on_scores(
             if share > SHARED_ERROR_LIMIT:
                 # "use smaller batches" beside "the batches are small for the chart" left the
                 # reader no way to follow both: smaller batches would slow the chart further
-                notes[shared_note] = notes[shared_note].replace(
-                    "Label more rows or use smaller batches.",
-                    "Label more rows (smaller batches would lower this share but, as the note on "
-                    "the batches says, they are already small for the chart).")
+                notes[shared_note] = notes[shared_note].replace(SHARED_ADVICE, SHARED_ADVICE_SLOW)
     first = labels[int(res.alarms[0])] if res.alarms.size else None
     return BatchAlarm(
         result=res, batches=list(labels), first_batch=first,

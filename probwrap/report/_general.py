@@ -157,6 +157,9 @@ def _class_alarms(content: MulticlassReportContent, fitted: Any, notes: NoteLog,
             expected=(ValueError,), **settings)
         if alarm is not None:
             content.class_alarms[j] = alarm
+    from ._alarm_chart import same_batch_advice
+
+    content.class_alarms = same_batch_advice(content.class_alarms)
 
 
 def _metric_rows(y, p, w, n_bins, n_resamples, level, seed, notes,
