@@ -310,7 +310,7 @@ def adapt_pair(pair, Xu):
     return a, Pa, P0, wf, wa, diff, same_warn, f"{wfb}|{wab}"
 
 
-def one(name, X, y, mname, seed, rows, crashes, skipped):
+def one(name, X, y, mname, seed, rows, crashes, skipped, n_labelled=N_LABELLED):
     classes = np.unique(y)
     k = len(classes)
     A, B, C = split3(y, seed)
@@ -323,7 +323,7 @@ def one(name, X, y, mname, seed, rows, crashes, skipped):
     kinds, j = kinds_for(source)
     rng_t = np.random.default_rng([seed, 11])
     shares = {kd: target_shares(source, kd, j, rng_t) for kd in kinds}
-    sizes = sorted({min(n, len(B)) for n in N_LABELLED})
+    sizes = sorted({min(n, len(B)) for n in n_labelled})
     for n_lab in sizes:
         L = labelled(B, y[B], classes, n_lab, np.random.default_rng([seed, 17, n_lab]))
         U = np.setdiff1d(pool, L)  # the unlabelled pool: rows neither fitting nor labelled
