@@ -3,6 +3,7 @@ cross-validated log loss of each and the one-standard-error rule (a mixin of the
 
 from __future__ import annotations
 
+import dataclasses
 import numbers
 import warnings
 from typing import Any
@@ -14,6 +15,7 @@ from sklearn.utils import check_random_state
 from ._calibration_shares import ABSENT_CLASS_NOTE, class_shares_losses, smoothed_class_shares
 from ._heldout import HeldOutPredictions, keep_cells_together
 from ._validation import plain
+from ._weights import case_rows
 from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
 from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
@@ -257,6 +259,22 @@ def _boundary_of(cal: Any) -> str | None:
         if hit is not None:
             return hit if len(maps) == 1 else f"class {k}: {hit}"
     return None
+
+
+def _cases_of(ho: HeldOutPredictions, cases: np.ndarray) -> HeldOutPredictions:
+    """``ho``'s rows repeated by their whole-number counts (``cases``: the index of each case,
+    :func:`probwrap._weights.case_rows`), each case of weight 1, in its row's fold; the cells
+    that keep a choice's folds together are those the repeated rows would get (copies of a
+    row: ``ho.case_cells``), not the table's success and failure rows of one cell."""
+    copies = getattr(ho, "case_cells", None)
+    return dataclasses.replace(
+        ho,
+        y_index=np.asarray(ho.y_index)[cases],
+        sample_weight=np.ones(cases.shape[0]),
+        fold=np.asarray(ho.fold)[cases] if ho.n_folds else np.broadcast_to(
+            np.array(-1, dtype=int), (cases.shape[0],)),
+        cells=None if copies is None else np.asarray(copies)[cases],
+    )
 
 
 def _drop_ineligible(names: list[str], drop: list[str], notes: dict, reason: str) -> list[str]:
@@ -527,6 +545,15 @@ class _AutoChoice:
         Returns ``(name, scores, notes)``: ``scores[name] = (loss, se)`` for every candidate
         scored, ``notes[name]`` the reason a candidate was not eligible or could not be scored.
         """
+        cases = None if getattr(ho, "from_tally", False) else case_rows(w)
+        if cases is not None:
+            # a count table (whole-number weights, some above 1): the choice scores its cases
+            # one by one, as it scores the rows repeated by their counts (np.repeat): the same
+            # folds, rows per class, row bounds and standard errors (counted by Kish's size of
+            # the weights before session 26, so a table and its repeated rows could get
+            # different maps; docs/aggregated_outcomes.md, "Count tables and choices")
+            ho = _cases_of(ho, cases)
+            scores, w = scores[cases], np.ones(cases.shape[0])
         y = ho.y_index
         binary = scores.ndim == 1
         names = self._auto_names(y.shape[0], 1 if binary else scores.shape[1])

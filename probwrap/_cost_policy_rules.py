@@ -20,6 +20,7 @@ from ._column_models import ProbabilityColumn
 from ._cost_policy_summary import CURVE_POINTS, SMALL_HELDOUT_ROWS, _heldout_summary
 from ._heldout import row_count
 from ._validation import plain
+from ._weights import counted_rows
 from .calibration._base import FewClassRowsWarning, WeightScaleWarning, count_weights
 from .decision import (
     apply_class_offsets,
@@ -126,7 +127,10 @@ def recalibrated_plugin_cutoff(
                 f"numpy.random.RandomState; got {plain(random_state)!r}."
             ) from exc
     keep = w > 0
-    n = int(np.count_nonzero(keep))
+    # rows of weight > 0; a count table's whole-number weights count its cases, as its rows
+    # repeated would (session 26; before, the table's rows: docs/aggregated_outcomes.md)
+    counted = counted_rows(w)
+    n = int(counted.sum())
     if n > RECALIBRATED_ANCHOR_MAX_ROWS or np.unique(y[keep]).shape[0] < 2:
         return t0, None
     names = list(_ANCHOR_CANDIDATES)
@@ -181,7 +185,8 @@ def recalibrated_plugin_cutoff(
         # cross-fitted on 40 rows (12 negatives): Platt 0.79 -> 0.63, flag every row, 0.634 ->
         # 0.301 a row (sigmoid 0.301).
         if (crossfit and cw.method_ == "class_shares"
-                and np.bincount(y[keep], minlength=2).min() >= PLATT_ANCHOR_MIN_CLASS_ROWS):
+                and np.bincount(y[keep], weights=counted[keep], minlength=2).min()
+                >= PLATT_ANCHOR_MIN_CLASS_ROWS):
             return t0, None
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -248,9 +253,11 @@ def _platt_over_identity(cw: Any, p, y, w) -> Any:
 
     from ._calibration_wrapper import CalibrationWrapper
 
-    if y.shape[0] > PLATT_ANCHOR_MAX_ROWS:
+    counted = counted_rows(w)  # a count table's cases (session 26), else the rows
+    if int(counted.sum()) > PLATT_ANCHOR_MAX_ROWS:
         return None
-    if np.bincount(np.asarray(y, dtype=np.intp), minlength=2).min() < PLATT_ANCHOR_MIN_CLASS_ROWS:
+    if (np.bincount(np.asarray(y, dtype=np.intp), weights=counted, minlength=2).min()
+            < PLATT_ANCHOR_MIN_CLASS_ROWS):
         return None
     scores = cw.method_scores_
     if "platt" not in scores or "identity" not in scores or "platt" in cw.method_notes_:
@@ -387,8 +394,7 @@ class _RuleFitting:
 
         if getattr(ho, "from_tally", False):
             return
-        w = np.asarray(ho.sample_weight)
-        counts = np.bincount(np.asarray(ho.y_index)[w > 0], minlength=len(self.classes_))
+        counts = ho.class_row_counts(np.asarray(ho.sample_weight))  # (a count table's cases)
         few = np.flatnonzero((counts > 0) & (counts < FEW_CLASS_ROWS))
         if not few.size:
             return

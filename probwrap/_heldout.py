@@ -42,6 +42,7 @@ from ._validation import (
     check_target_labels,
     plain,
 )
+from ._weights import whole_counts
 from .calibration._base import rescale_extreme_weights
 
 __all__ = ["HeldOutClassifierBase", "HeldOutPredictions"]
@@ -799,6 +800,9 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             n_folds=n_folds,
             estimator=estimator,
             cells=cells,
+            # a count table's cases: the cells its rows repeated by their counts would get
+            case_cells=(feature_cells(X, None, np.asarray(y_index))
+                        if sw is not None and whole_counts(sw) is not None else None),
         )
 
     def _splits_keeping_cells(

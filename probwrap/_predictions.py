@@ -64,14 +64,21 @@ class HeldOutPredictions:
     #: (counts expanded to a success and a failure row per group), else None: folds made on the
     #: held-out rows keep a cell's rows together (``_heldout.feature_cells``).
     cells: np.ndarray | None = None
+    #: With whole-number weights: the cells the rows repeated by their counts would get (copies
+    #: of a row kept together, ``_heldout.copied_row_cells`` on the rows), else None; used
+    #: where ``method="auto"`` scores a count table's cases one by one.
+    case_cells: np.ndarray | None = None
 
     def class_row_counts(self, w: np.ndarray) -> np.ndarray:
-        """Rows of positive weight per class (rows, not weights: the scale of the weights
-        cannot change a count); for tally rows the original rows' counts."""
+        """Rows of positive weight per class (rows, not weights: the scale of relative weights
+        cannot change a count; a count table's whole-number weights count its cases, as its
+        rows repeated would, since session 26); for tally rows the original rows' counts."""
         if self.from_tally and self.weighted_class_rows is not None:
             return np.asarray(self.weighted_class_rows, dtype=np.int64)
-        return np.bincount(np.asarray(self.y_index, dtype=np.intp)[np.asarray(w) > 0],
-                           minlength=len(self.classes))
+        from ._weights import counted_rows  # (a count table's rows count their cases)
+
+        return np.bincount(np.asarray(self.y_index, dtype=np.intp), weights=counted_rows(w),
+                           minlength=len(self.classes)).astype(np.int64)
 
 
 def resolve_response(estimator: Any, response: str) -> str:

@@ -16,6 +16,7 @@ from typing import Any
 import numpy as np
 
 from .._validation import cutoff_text, cutoff_texts, power_of_two_unit
+from .._weights import whole_counts
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
@@ -178,10 +179,13 @@ def cutoff_summary(
                                else [float(exact_low), float(exact_high)]),
         # why there is no exact range (None when there is one)
         "cutoff_exact_range_note": exact_note,
-        # what the exact tests count: "rows", or "kish_effective_rows" for unequal weights
+        # what the exact tests count: "rows", "cases" for whole-number weights (a count
+        # table's rows repeated by their counts, since session 26), or "kish_effective_rows"
+        # for other unequal weights
         "cutoff_exact_range_counts": None if exact_note is not None else (
             "rows" if sample_weight is None
             or np.ptp(np.asarray(sample_weight)[np.asarray(sample_weight) > 0]) == 0
+            else "cases" if whole_counts(np.asarray(sample_weight, dtype=float)) is not None
             else "kish_effective_rows"),
         "confidence_level": float(confidence_level),
         "n_resamples": int(n_resamples),
@@ -310,9 +314,11 @@ def _exact_lines(out: dict[str, Any], level: int) -> list[str]:
     exact, note = out.get("cutoff_exact_range"), out.get("cutoff_exact_range_note")
     if exact is not None:
         lo_t, hi_t = cutoff_texts(exact)
+        how = out.get("cutoff_exact_range_counts")
         counted = ("; unequal weights: the rows between two cutoffs count as Kish's "
-                   "effective rows" if out.get("cutoff_exact_range_counts")
-                   == "kish_effective_rows" else "")
+                   "effective rows" if how == "kish_effective_rows" else
+                   "; whole-number weights: each row counts as that many cases"
+                   if how == "cases" else "")
         return [f"  exact-test range      [{lo_t}, {hi_t}]   (no one-sided exact binomial test "
                 f"at {100 - level}% shows one of these cutoffs dearer than another; fewer than "
                 f"100 (effective) rows{counted})"]

@@ -9,6 +9,7 @@ from typing import Any
 import numpy as np
 
 from .._validation import check_same_length, plain
+from .._weights import whole_counts
 from ._cutoff import _check_bounds, _pick_optimum, _prepare, _search_rows, check_capacity
 from ._cutoff_rows import _RowCosts, _SortedRows
 
@@ -240,7 +241,8 @@ def exact_cutoff_range(
     w1 = np.ones(s.shape[0]) if w is None else w
     present = np.flatnonzero(w1 > 0)
     wp = w1[present]
-    effective = float(wp.sum() ** 2 / np.dot(wp, wp)) if present.size else 0.0
+    counts = _case_counts(sample_weight, present)
+    effective = _effective_rows(wp, counts) if present.size else 0.0
     note = exact_range_note(effective, capacity=cap, per_row_costs=matrix.ndim != 2)
     if note is not None or present.size == 0:
         return float("nan"), float("nan"), note
@@ -249,17 +251,44 @@ def exact_cutoff_range(
     rc = _RowCosts(matrix, yi[present], None if equal else wp)
     tie_low, tie_high = (float(v) for v in _search_rows(s[present], rc, None, bounds).interval)
     lo, hi = _row_exact_range(rows, yi[present], wp, matrix, float(confidence_level),
-                              tie_low, tie_high)
+                              tie_low, tie_high, counts)
     return lo, hi, None
 
 
+def _case_counts(sample_weight: Any, present: np.ndarray) -> np.ndarray | None:
+    """The whole-number counts of the rows ``present`` (of weight > 0) when ``sample_weight``
+    (as given, already validated) is a count table (:func:`probwrap._weights.whole_counts`),
+    else None."""
+    if sample_weight is None:
+        return None
+    counts = whole_counts(np.asarray(sample_weight, dtype=float).ravel())
+    return None if counts is None else counts[present]
+
+
+def _effective_rows(w: np.ndarray, counts: np.ndarray | None) -> float:
+    """The rows that weights ``w`` (all > 0) stand for in the exact range: a count table's
+    cases (``counts``: :func:`_case_counts`), else Kish's (1965) effective size
+    ``(sum w)^2 / sum w^2`` (the rows themselves when the weights are equal)."""
+    if counts is not None:
+        return float(counts.sum())
+    return float(w.sum() ** 2 / np.dot(w, w))
+
+
 def _row_exact_range(rows: _SortedRows, y: np.ndarray, w: np.ndarray, matrix: np.ndarray,
-                     level: float, tie_low: float, tie_high: float) -> tuple[float, float]:
+                     level: float, tie_low: float, tie_high: float,
+                     counts: np.ndarray | None = None) -> tuple[float, float]:
     """:func:`_exact_range` of rows of positive weight ``w``: counts of rows when the weights
-    are equal, Kish's effective rows between two cutoffs otherwise."""
+    are equal, a count table's cases when ``counts`` (:func:`_case_counts`) are given, Kish's
+    effective rows between two cutoffs otherwise."""
     o = rows.order
     if np.ptp(w) == 0.0:
         return _exact_range(rows, y[o].astype(float), matrix, level, tie_low, tie_high)
+    if counts is not None:
+        # a count table (whole-number weights): its cases, as the rows repeated by their counts
+        # (since session 26; before, Kish's size, a wider range than the repeated rows')
+        c = counts.astype(float)
+        return _exact_range(rows, (c * y)[o], matrix, level, tie_low, tie_high,
+                            counts_sorted=c[o])
     u = w / w.max()  # (only the ratios matter; no square underflows or overflows)
     return _exact_range(rows, (u * y)[o], matrix, level, tie_low, tie_high,
                         counts_sorted=u[o], squares_sorted=(u * u)[o])
@@ -506,13 +535,16 @@ def cutoff_interval(
     # count of rows, or of groups, when unweighted)
     sizes = wp if unit_of_row is None else np.bincount(unit_of_row, weights=wp,
                                                        minlength=n_units)
-    effective = float(sizes.sum() ** 2 / np.dot(sizes, sizes))
+    counts = _case_counts(sample_weight, present)
+    effective = _effective_rows(sizes, counts) if unit_of_row is None else float(
+        sizes.sum() ** 2 / np.dot(sizes, sizes))
     exact_low = exact_high = float("nan")
     if exact_range_note(effective, capacity=cap, per_row_costs=matrix.ndim != 2,
                         groups=groups is not None) is None:
         # equal weights: the rows count as rows; unequal: Kish's rows between two cutoffs
         exact_low, exact_high = _row_exact_range(rows, yi[present], wp, matrix,
-                                                 float(confidence_level), tie_low, tie_high)
+                                                 float(confidence_level), tie_low, tie_high,
+                                                 counts)
     if effective < FEW_INTERVAL_ROWS:
         units = ("(effective) rows" if unit_of_row is None else
                  f"(effective) groups, the units it resamples ({n} rows in {n_units} groups)")
