@@ -267,7 +267,7 @@ def _cases_of(ho: HeldOutPredictions, cases: np.ndarray) -> HeldOutPredictions:
     that keep a choice's folds together are those the repeated rows would get (copies of a
     row: ``ho.case_cells``), not the table's success and failure rows of one cell."""
     copies = getattr(ho, "case_cells", None)
-    return dataclasses.replace(
+    out = dataclasses.replace(
         ho,
         y_index=np.asarray(ho.y_index)[cases],
         sample_weight=np.ones(cases.shape[0]),
@@ -275,6 +275,10 @@ def _cases_of(ho: HeldOutPredictions, cases: np.ndarray) -> HeldOutPredictions:
             np.array(-1, dtype=int), (cases.shape[0],)),
         cells=None if copies is None else np.asarray(copies)[cases],
     )
+    # folds given as `cv` (index pairs, a splitter) are folds of the table's rows: each case
+    # joins its row's fold (``_selection_folds``)
+    out.table_rows = (cases, np.asarray(ho.y_index))
+    return out
 
 
 def _drop_ineligible(names: list[str], drop: list[str], notes: dict, reason: str) -> list[str]:
@@ -347,6 +351,10 @@ class _AutoChoice:
                 n_splits = 2
             splitter = StratifiedKFold(n_splits, shuffle=True, random_state=self.random_state)
         else:
+            if getattr(ho, "table_rows", None) is not None:
+                # a count table's cases (``_cases_of``) with folds given for its rows (all
+                # rows: no sample is drawn with folds given)
+                y = ho.table_rows[1]
             splitter = self._make_splitter(y)
         fold = np.full(y.shape[0], -1)
         with warnings.catch_warnings():
@@ -355,6 +363,8 @@ class _AutoChoice:
                 fold[test] = i
         if np.any(fold < 0):
             raise ValueError("`cv` must partition the rows to score the candidate maps.")
+        if not isinstance(cv, numbers.Integral) and getattr(ho, "table_rows", None) is not None:
+            fold = fold[ho.table_rows[0]]  # every case in its row's fold
         cells = getattr(ho, "cells", None)
         if cells is not None and isinstance(cv, numbers.Integral):
             # counts as a success and a failure row per group: keep a group's rows in one fold
@@ -545,7 +555,13 @@ class _AutoChoice:
         Returns ``(name, scores, notes)``: ``scores[name] = (loss, se)`` for every candidate
         scored, ``notes[name]`` the reason a candidate was not eligible or could not be scored.
         """
-        cases = None if getattr(ho, "from_tally", False) else case_rows(w)
+        # (not for a cross-fitted model whose folds kept the table's cells together: its
+        # held-out rows are predicted cell by cell, and the cells, not their cases, are the
+        # units the folds hold out; nor where the caller says so, see
+        # _cost_policy_rules.recalibrated_plugin_cutoff)
+        leave_cells_out = ho.n_folds > 0 and getattr(ho, "cells", None) is not None
+        cases = (None if getattr(ho, "from_tally", False) or leave_cells_out
+                 or not getattr(self, "_count_table_cases", True) else case_rows(w))
         if cases is not None:
             # a count table (whole-number weights, some above 1): the choice scores its cases
             # one by one, as it scores the rows repeated by their counts (np.repeat): the same

@@ -90,7 +90,7 @@ CERTAIN_ROWS_SHARE = 0.1
 
 
 def recalibrated_plugin_cutoff(
-    p, y, w, t0: float, random_state: Any, *, crossfit: bool = False
+    p, y, w, t0: float, random_state: Any, *, crossfit: bool = False, cases: bool = True
 ) -> tuple[float, str | None]:
     """The plug-in cutoff ``t0`` carried back to the scale of the held-out probabilities ``p``
     through the map ``CalibrationWrapper(method="auto")`` chooses for them on the same rows (the
@@ -105,6 +105,9 @@ def recalibrated_plugin_cutoff(
     ``RECALIBRATED_ANCHOR_MAX_ROWS`` rows, when a map cannot be fitted, or when the fitted map
     is not non-decreasing and crosses ``t0`` (then no single cutoff on ``p`` reproduces it). ``random_state``
     seeds the folds that score the maps (None: seed 0, so that the result is reproducible).
+    ``cases``: whole-number weights (a count table) count their cases, as the rows repeated
+    would (since session 26); ``False`` counts the rows, and the map's choice reads the weights
+    by Kish's size (a cross-fitted model whose folds kept the table's cells together).
 
     The plain plug-in cutoff trusts the model's probabilities; on a few hundred held-out rows
     the one-sided test of :func:`~probwrap.decision.settle_cutoff` seldom rejects it even where
@@ -129,7 +132,7 @@ def recalibrated_plugin_cutoff(
     keep = w > 0
     # rows of weight > 0; a count table's whole-number weights count its cases, as its rows
     # repeated would (session 26; before, the table's rows: docs/aggregated_outcomes.md)
-    counted = counted_rows(w)
+    counted = counted_rows(w) if cases else keep.astype(np.int64)
     n = int(counted.sum())
     if n > RECALIBRATED_ANCHOR_MAX_ROWS or np.unique(y[keep]).shape[0] < 2:
         return t0, None
@@ -144,7 +147,9 @@ def recalibrated_plugin_cutoff(
                 # seeded even when random_state is None: a frozen model's tuned cutoff, which
                 # used no random numbers before, stays reproducible
                 random_state=0 if random_state is None else random_state,
-            ).fit(p[keep, None], y[keep], sample_weight=w[keep])
+            )
+            cw._count_table_cases = cases
+            cw.fit(p[keep, None], y[keep], sample_weight=w[keep])
             u = np.unique(p[keep])
             q = cw.predict_proba(u[:, None])[:, 1]
     except ValueError:
@@ -253,7 +258,9 @@ def _platt_over_identity(cw: Any, p, y, w) -> Any:
 
     from ._calibration_wrapper import CalibrationWrapper
 
-    counted = counted_rows(w)  # a count table's cases (session 26), else the rows
+    # a count table's cases (session 26, unless the anchor counts rows), else the rows
+    counted = (counted_rows(w) if getattr(cw, "_count_table_cases", True)
+               else (np.asarray(w) > 0).astype(np.int64))
     if int(counted.sum()) > PLATT_ANCHOR_MAX_ROWS:
         return None
     if (np.bincount(np.asarray(y, dtype=np.intp), weights=counted, minlength=2).min()
@@ -469,6 +476,9 @@ class _RuleFitting:
                 anchor, self.cutoff_anchor_map_ = recalibrated_plugin_cutoff(
                     p, ho.y_index, ho.sample_weight, plugin_cutoff(matrix), self.random_state,
                     crossfit=ho.n_folds > 0,
+                    # cross-fitted with a count table's cells kept together in the folds: the
+                    # held-out rows are predicted cell by cell, so the cells are the units
+                    cases=not (ho.n_folds > 0 and getattr(ho, "cells", None) is not None),
                 )
             self.cutoff_anchor_ = float(anchor)
             self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res,

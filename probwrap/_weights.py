@@ -119,19 +119,25 @@ def whole_counts(w: np.ndarray) -> np.ndarray | None:
     """``w`` as whole-number counts of cases (int64), or None when they are not a count table.
 
     A count table's weights are whole numbers, some of them above 1 (one row per distinct
-    cell, weighted by how many cases it stands for), with a total of at most
-    :data:`COUNT_TABLE_MAX_CASES`. Weights that are all 0 or 1, and any weight that is not a
-    whole number (normalised, survey or importance weights), give None: those keep their
-    reading (rows, or Kish's effective size).
+    cell, weighted by how many cases it stands for), with no common factor above 1 and a total
+    of at most :data:`COUNT_TABLE_MAX_CASES`. Weights that are all 0 or 1, any weight that is
+    not a whole number (normalised, survey or importance weights), and whole numbers that all
+    share a factor above 1 (equal weights of 1,000, or counts multiplied by a constant: more
+    often a scaled weight than a count, and the factor must not move a choice; they draw the
+    :class:`~probwrap.calibration.WeightScaleWarning` of :func:`warn_count_reading` where
+    their scale moves a result) give None: those keep their reading (rows, or Kish's
+    effective size).
 
     Examples
     --------
     >>> import numpy as np
     >>> whole_counts(np.array([3.0, 0.0, 2.0])).tolist(), whole_counts(np.array([1.5, 2.0]))
     ([3, 0, 2], None)
+    >>> whole_counts(np.array([3000.0, 2000.0])) is None  # every weight a multiple of 1,000
+    True
     """
     w = np.asarray(w, dtype=float)
-    if not w.size or shared_factor(w) is None or not float(w.max()) > 1.0:
+    if not w.size or shared_factor(w) != 1 or not float(w.max()) > 1.0:
         return None
     if np.any(w < 0) or float(w.sum()) > COUNT_TABLE_MAX_CASES:
         return None

@@ -140,13 +140,17 @@ def test_exact_cutoff_range_counts_a_tables_cases(name, seed):
 
 def test_non_integer_weights_keep_kishs_reading():
     # normalised (or any non-integer) weights stay relative: the exact range counts Kish's
-    # size, at every scale, and is wider than the whole-number counts' range
+    # size, at every scale, and is wider than the whole-number counts' range; so do whole
+    # numbers that all share a factor above 1
     base, (Xt, yt, wt), _, _ = _draw("UCBAdmissions", 60, 0, GaussianNB())
     p = base.predict_proba(Xt)[:, 1]
     counts = exact_cutoff_range(p, yt, COSTS, sample_weight=wt, score_bounds=(0, 1))
     rel = [exact_cutoff_range(p, yt, COSTS, sample_weight=wt / wt.sum() * k,
                               score_bounds=(0, 1)) for k in (1.0, 1e-3, 7.3)]
     assert rel[0] == rel[1] == rel[2]
+    # counts that all share a factor (the table times 1,000) are read as relative weights too
+    assert exact_cutoff_range(p, yt, COSTS, sample_weight=wt * 1000,
+                              score_bounds=(0, 1)) == pytest.approx(rel[0], abs=1e-12)
     assert rel[0][1] - rel[0][0] > counts[1] - counts[0]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -160,6 +164,8 @@ def test_non_integer_weights_keep_kishs_reading():
 def test_what_counts_as_a_count_table():
     assert whole_counts(np.array([3.0, 0.0, 2.0])).tolist() == [3, 0, 2]
     assert whole_counts(np.ones(5)) is None  # all 1: nothing to count
+    assert whole_counts(np.full(5, 1000.0)) is None  # equal weights: no counts
+    assert whole_counts(np.array([3.0, 2.0]) * 1000) is None  # a shared factor: scaled weights
     assert whole_counts(np.array([0.5, 2.0])) is None  # not whole numbers: relative
     assert whole_counts(np.array([2.0, float(COUNT_TABLE_MAX_CASES)])) is None  # beyond the cap
     assert case_rows(np.array([2.0, 0.0, 1.0])).tolist() == [0, 0, 2]
