@@ -535,11 +535,13 @@ def cutoff_interval(
     # count of rows, or of groups, when unweighted)
     sizes = wp if unit_of_row is None else np.bincount(unit_of_row, weights=wp,
                                                        minlength=n_units)
-    counts = _case_counts(sample_weight, present)
-    effective = _effective_rows(sizes, counts) if unit_of_row is None else float(
-        sizes.sum() ** 2 / np.dot(sizes, sizes))
+    effective = float(sizes.sum() ** 2 / np.dot(sizes, sizes))
+    # the exact range counts a count table's cases, as the rows repeated (session 26); the
+    # bootstrap above resamples the table's rows, so its warning keeps their Kish size
+    counts = _case_counts(sample_weight, present) if unit_of_row is None else None
     exact_low = exact_high = float("nan")
-    if exact_range_note(effective, capacity=cap, per_row_costs=matrix.ndim != 2,
+    if exact_range_note(_effective_rows(sizes, counts) if unit_of_row is None else effective,
+                        capacity=cap, per_row_costs=matrix.ndim != 2,
                         groups=groups is not None) is None:
         # equal weights: the rows count as rows; unequal: Kish's rows between two cutoffs
         exact_low, exact_high = _row_exact_range(rows, yi[present], wp, matrix,
