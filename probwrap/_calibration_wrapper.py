@@ -180,7 +180,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         of the best one, so a richer map must win by more than its cross-validation noise
         (simplest first: temperature before Platt scaling, except that a binary model
         cross-fitted here on 100 rows or more tries Platt scaling first, see
-        docs/calibration.md). A candidate whose fit reaches a boundary is not eligible, and with too few rows of a
+        docs/calibration.md). A count table (``sample_weight`` whole numbers without a common
+        factor, some above 1) is scored case by case, as its rows repeated would be, except
+        where a cross-fitted model's folds kept its cells together (docs/weights.md). A candidate whose fit reaches a boundary is not eligible, and with too few rows of a
         class to cross-validate ``"auto"`` warns and uses the most regularised map (Platt
         scaling for binary, temperature scaling for multiclass problems); see
         ``method_notes_``. A candidate whose fit fails in a fold is left out with a warning,

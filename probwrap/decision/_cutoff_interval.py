@@ -58,7 +58,9 @@ class CutoffInterval:
         cutoff (see :func:`cutoff_interval`), which covered the population's least-cost cutoff
         in 97.5-100 % of draws of 20 and 50 rows where ``(low, high)`` covered it in 68-95 %,
         at 1.5-1.9 times the width. NaN otherwise. With unequal weights the rows between two
-        cutoffs count as Kish's effective rows (since 4 December 2026; NaN before). Intervals
+        cutoffs count as Kish's effective rows (since 4 December 2026; NaN before), except
+        whole-number counts without a common factor (a count table), which count their cases:
+        the range of the rows repeated (since session 26). Intervals
         drawn from a tally (Dask or Spark fits through their tallies,
         ``probwrap.scale._bootstrap.tally_cutoff_interval``) compute it from the tally's rows
         per bin, or its weights and squared weights per bin; the command line's ``cutoff``
@@ -427,6 +429,8 @@ def cutoff_interval(
     w^2`` with their weighted positive share kept, and the binomial tails are the regularised
     incomplete beta functions they equal for whole counts: under the null the weighted share
     has the binomial share's mean and variance exactly; equal weights give back the counts.
+    A count table (whole-number weights without a common factor, some above 1) counts its
+    cases instead: ``exact_low`` / ``exact_high`` are those of its rows repeated (session 26).
 
     The rows are sorted once; each bootstrap resample only re-weights them (a row drawn ``c``
     times gets ``c`` times its weight) and repeats the cumulative sums, so a resample costs O(n).
