@@ -170,3 +170,27 @@ def test_what_counts_as_a_count_table():
     assert whole_counts(np.array([2.0, float(COUNT_TABLE_MAX_CASES)])) is None  # beyond the cap
     assert case_rows(np.array([2.0, 0.0, 1.0])).tolist() == [0, 0, 2]
     assert counted_rows(np.array([0.25, 0.0, 2.5])).tolist() == [1, 0, 1]
+
+
+def test_cli_exact_range_of_a_count_table_is_its_repeated_files(tmp_path, capsys, monkeypatch):
+    import json
+
+    import probwrap.cli._progress as progress
+    from probwrap.cli import main
+
+    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+    base, (Xt, yt, wt), (Xr, yr), _ = _draw("UCBAdmissions", 60, 0, GaussianNB())
+    table, rows = tmp_path / "table.csv", tmp_path / "rows.csv"
+    pd.DataFrame({"score": base.predict_proba(Xt)[:, 1], "label": yt, "n": wt.astype(int)}
+                 ).to_csv(table, index=False)
+    pd.DataFrame({"score": base.predict_proba(Xr)[:, 1], "label": yr}).to_csv(rows, index=False)
+    args = ["cutoff", "--score-column", "score", "--label-column", "label", "--cost-fp", "1",
+            "--cost-fn", "3", "--resamples", "0", "--format", "json"]
+    out = {}
+    for name, path, extra in (("table", table, ["--weight-column", "n"]), ("rows", rows, [])):
+        assert main(args + ["--scores", str(path)] + extra) == 0
+        out[name] = json.loads(capsys.readouterr().out)
+    assert out["table"]["cutoff_exact_range_counts"] == "cases"  # "kish_effective_rows" before
+    assert out["rows"]["cutoff_exact_range_counts"] == "rows"
+    assert out["table"]["cutoff_exact_range"] == pytest.approx(out["rows"]["cutoff_exact_range"],
+                                                               abs=1e-12)
