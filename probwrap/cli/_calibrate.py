@@ -188,7 +188,8 @@ def _fit(args: argparse.Namespace) -> int:
         late = weights = None
         if late_columns is None:
             y, labels = read_labels(
-                frame, args.label_column, args.scores, positive=args.positive_label
+                frame, args.label_column, args.scores, positive=args.positive_label,
+                score_column=args.score_column
             )
             closed = np.ones(y.shape[0], dtype=bool)
         else:
@@ -333,7 +334,8 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
         # a byte-order mark (editors on Windows add one) is skipped, as in CSV files
         description = json.loads(read_text())
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise DataError(f"{path}: not a JSON file ({exc})") from None
+        raise DataError(f"{path}: not a JSON file ({exc}); --map takes the .json map file "
+                        "written by `probwrap calibrate fit --out`") from None
     except RecursionError:
         raise DataError(f"{path}: not a probwrap map (JSON nested too deeply)") from None
     except OSError as exc:

@@ -415,7 +415,8 @@ def _run(args: argparse.Namespace) -> int:
                              dots=getattr(args, "weight_dots", None))
         if late_columns is None:
             y, labels = read_labels(
-                frame, args.label_column, args.scores, positive=args.positive_label
+                frame, args.label_column, args.scores, positive=args.positive_label,
+                score_column=args.score_column
             )
             closed = np.ones(y.shape[0], dtype=bool)
         else:

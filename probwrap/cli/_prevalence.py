@@ -410,7 +410,10 @@ def _run(args: argparse.Namespace) -> int:
             if args.scale == "log-odds":
                 ref_scores = log_odds_to_proba(ref_scores)
             ref_y, labels = read_labels(
-                ref, args.label_column, args.reference, positive=args.positive_label
+                ref, args.label_column, args.reference, positive=args.positive_label,
+                score_column=ref_column, score_flag=("--reference-score-column"
+                                                     if args.reference_score_column
+                                                     else "--score-column")
             )
             ref_settings = {"reference_weight": kish_scaled(ref_weights)}
             if args.reference_cell_column is not None:

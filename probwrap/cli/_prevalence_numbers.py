@@ -89,7 +89,9 @@ def prevalence_from_source(
         )
     out = result_dict(point.prior[1], point.converged, "em", proba.shape[0], source_prevalence, test)
     if edge_warning and not point_caught:  # em_prior's own warning says it already
-        _warn_edge(float(point.prior[1]), source_prevalence, p2[:, 1], w)
+        if not _warn_edge(float(point.prior[1]), source_prevalence, p2[:, 1], w):
+            _warn_source_mean(float(point.prior[1]), source_prevalence, p2[:, 1], w,
+                              float(test.pvalue))
     if n_resamples > 0:
         rng = check_random_state(seed)
         n = proba.shape[0]
@@ -115,12 +117,61 @@ def prevalence_from_source(
     return out
 
 
-def _warn_edge(estimate: float, source: float, p: np.ndarray, w: np.ndarray | None) -> None:
-    """Warn when EM's prevalence sits at 0 or 1 (see :func:`prevalence_from_source`)."""
+#: factor by which the scores' average share of the rarer class may differ from the source
+#: prevalence's before ``prevalence --source-prevalence`` warns that the scores may not be
+#: calibrated for it (our rule: the class at least doubled or halved)
+SOURCE_MEAN_FACTOR = 2.0
+
+
+def _warn_source_mean(estimate: float, source: float, p: np.ndarray, w: np.ndarray | None,
+                      pvalue: float, level: float = 0.05) -> bool:
+    """Warn when the scores' average puts the rarer class's share at least
+    :data:`SOURCE_MEAN_FACTOR` times above or below the source prevalence's, beyond sampling
+    error (the shift test's p-value below ``level``).
+
+    Nothing in unlabelled scores tells a shift from scores not calibrated for ``source``: EM's
+    estimate ``q`` is exactly the reading of scores whose log-odds are all off by
+    ``logit(q) - logit(source)`` with no shift. But calibrated scores move less than the
+    prevalence does: under prior shift their average is ``source + (q - source) * d``, where
+    ``d`` (the difference of the classes' mean scores) lies in [0, 1]. An average at twice
+    the stated share of the rarer class therefore says that the class at least doubled, or
+    that the scores were not calibrated for ``source`` (scores of a model trained on
+    rebalanced classes average near 0.5; naive Bayes' often sit far off) -- the two readings
+    the warning names. Returns whether it warned.
+    """
+    if not pvalue < level:
+        return False
+    mean = float(np.average(p, weights=w))
+    rare_source = min(source, 1.0 - source)
+    rare_mean = mean if source < 0.5 else 1.0 - mean
+    factor = rare_mean / rare_source
+    if 1.0 / SOURCE_MEAN_FACTOR < factor < SOURCE_MEAN_FACTOR:
+        return False
+    cls = "positive" if source < 0.5 else "negative"
+    how = (f"{factor:.3g} times" if factor >= 1.0 else f"{1.0 / factor:.3g} times less than")
+    warnings.warn(
+        f"the scores average {mean:.4g}, which puts the share of the {cls} class at {how} the "
+        f"{rare_source:.4g} that --source-prevalence {source:.4g} gives it (shift test p-value "
+        f"{pvalue:.2g}). Calibrated scores move less than the prevalence does, so either the "
+        f"share of {cls}s moved at least that far (the estimate {estimate:.4g} says so), or "
+        "the scores are not calibrated for that source prevalence (a model trained on "
+        "rebalanced classes, naive Bayes, a forest's votes), which reads the same: nothing in "
+        "an unlabelled file tells the two apart. Check the scores on labelled rows of the "
+        "source population (their share as --source-prevalence should find no shift), or give "
+        "them as --reference so that the scores are recalibrated",
+        UserWarning,
+        stacklevel=3,
+    )
+    return True
+
+
+def _warn_edge(estimate: float, source: float, p: np.ndarray, w: np.ndarray | None) -> bool:
+    """Warn when EM's prevalence sits at 0 or 1 (see :func:`prevalence_from_source`);
+    returns whether it warned."""
     from probwrap.shift import BoundaryPriorWarning
 
     if not (estimate <= 1e-3 * source or estimate >= 1.0 - 1e-3 * (1.0 - source)):
-        return
+        return False
     mean = float(np.average(p, weights=w))
     side = "1 (every row positive)" if estimate > 0.5 else "0 (no row positive)"
     warnings.warn(
@@ -132,6 +183,7 @@ def _warn_edge(estimate: float, source: float, p: np.ndarray, w: np.ndarray | No
         BoundaryPriorWarning,
         stacklevel=2,
     )
+    return True
 
 
 def prevalence_from_reference(

@@ -85,7 +85,13 @@ def read_late_labels(frame: Any, args: argparse.Namespace, path: str,
     weights then multiply)."""
     from probwrap.late_labels import labels_at_horizon
 
-    time = numeric_column(frame, args.time_column, path, flag="--time-column")
+    if args.time_column in frame.columns:
+        _refuse_year_months(frame[args.time_column], args.time_column, path)
+    # a time written with a dot between thousands (4.190 days) in a semicolon- or
+    # tab-separated file without decimal commas was read as 4.19: the dots are settled as
+    # the weights' are (--weight-dots)
+    time = numeric_column(frame, args.time_column, path, flag="--time-column",
+                          dots=getattr(args, "weight_dots", None) or "ask")
     event = numeric_column(_true_false_as_numbers(frame, args.event_column), args.event_column,
                            path, flag="--event-column")
     bad = ~np.isin(event, (0.0, 1.0))
@@ -120,6 +126,24 @@ def read_late_labels(frame: Any, args: argparse.Namespace, path: str,
 
 
 _TRUE_FALSE = {"true": "1", "false": "0"}
+
+#: a year and a month written as a number, 2026.01 to 2026.12 (1900-2099)
+_YEAR_MONTH = re.compile(r"(?:19|20)\d\d\.(?:0[1-9]|1[0-2])")
+
+
+def _refuse_year_months(column: Any, name: str, path: str) -> None:
+    """Refuse a time column whose every value is a year and month written as a number
+    (``2026.01``): read as numbers, October (2026.10 = 2026.1) lies nine hundredths after
+    January and a year's months span 0.11, so the horizon would be read wrongly without a
+    word. The column must hold how long each row has been observed."""
+    text = [str(v).strip().strip('"') for v in column.tolist()
+            if v is not None and not (isinstance(v, float) and v != v) and str(v).strip()]
+    if text and all(_YEAR_MONTH.fullmatch(t) for t in text) and len(set(text)) > 1:
+        raise DataError(
+            f"{path}: column {shown(name)} (--time-column) holds values like {shown(text[0])}, "
+            "which look like a year and a month (read as numbers, 2026.10 would be 2026.1 and "
+            "the months would be hundredths of a year apart); give how long each row has been "
+            "observed (for example days since it was shipped), in the unit of --horizon")
 
 
 def _true_false_as_numbers(frame: Any, column: str) -> Any:

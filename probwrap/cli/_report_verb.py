@@ -678,7 +678,8 @@ def _handler(args: argparse.Namespace) -> int:
         late = None
         if late_columns is None:
             y, labels = read_labels(frame, args.label_column, args.scores,
-                                    positive=args.positive_label)
+                                    positive=args.positive_label,
+                                    score_column=args.score_column)
             closed = np.ones(y.shape[0], dtype=bool)
         else:
             late = read_late_labels(frame, args, args.scores, sample_weight=given)

@@ -196,6 +196,11 @@ def _read_standard_input(name: Any, **options: Any) -> Any:
             raise DataError(str(exc).replace(str(path), str(stream))) from None
 
 
+#: least share of a probability column's values above 1 (and at least two of them) for the
+#: message to read the column as percentages (our rule): one stray value above 1 among
+#: probabilities is a typo, not a column written in percent
+PERCENT_SHARE = 0.01
+
 #: the words pandas reads as a missing value by default (its documented ``na_values`` list)
 _MISSING_WORDS = frozenset({
     "", "#N/A", "#N/A N/A", "#NA", "-1.#IND", "-1.#QNAN", "-NaN", "-nan", "1.#IND", "1.#QNAN",
@@ -440,11 +445,17 @@ def _csv_header(path: Path, encoding: str, sep: str) -> list[str] | None:
 
 
 #: a field that is a number written with a decimal comma: 0,42 or -1,25 or Excel's 4,757E-02
-#: (optionally in double quotes), between semicolons or at the start or end of a line
-_DECIMAL_COMMA = re.compile(
-    r'(?:^|;)[ \t]*"?[ \t]*[-+]?\d+,\d+(?:[eE][-+]?\d+)?[ \t]*"?[ \t]*(?=;|\r?$)',
-    re.MULTILINE,
-)
+#: (optionally in double quotes), between semicolons (tabs) or at the start or end of a line
+_DECIMAL_COMMA = {
+    ";": re.compile(
+        r'(?:^|;)[ \t]*"?[ \t]*[-+]?\d+,\d+(?:[eE][-+]?\d+)?[ \t]*"?[ \t]*(?=;|\r?$)',
+        re.MULTILINE),
+    # a tab-separated file: spreadsheets' "text (tab-delimited)" export writes the locale's
+    # decimal comma as the ';' export does (it was refused as "not a finite number")
+    "\t": re.compile(
+        r'(?:^|\t)[ ]*"?[ ]*[-+]?\d+,\d+(?:[eE][-+]?\d+)?[ ]*"?[ ]*(?=\t|\r?$)',
+        re.MULTILINE),
+}
 #: characters read at a time when looking for decimal commas
 _SCAN_CHUNK = 1 << 20
 
@@ -478,8 +489,8 @@ def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
     """Separator and decimal mark of a CSV file.
 
     Comma-separated unless the header has no comma but a semicolon or a tab (spreadsheets in
-    many European locales write ``;`` with decimal commas), or as a first ``sep=X`` line says. With ``;`` the decimal mark is a
-    comma when any field of the file is a number written with one (``0,42``, ``4,757E-02``):
+    many European locales write ``;`` with decimal commas), or as a first ``sep=X`` line says.
+    With ``;`` or a tab the decimal mark is a comma when any field of the file is a number written with one (``0,42``, ``4,757E-02``):
     the whole file is looked at, since a sorted file may start with many rows of whole numbers.
     """
     try:
@@ -487,24 +498,27 @@ def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
             header = handle.readline()
             declared = _SEP_LINE.fullmatch(header.rstrip("\r\n"))
             if declared:  # a spreadsheet's "sep=;" line names the separator
-                if declared.group(1) != ";":
-                    return declared.group(1), "."
+                sep = declared.group(1)
+                if sep not in _DECIMAL_COMMA:
+                    return sep, "."
             else:
                 while header and not header.strip():
                     header = handle.readline()
                 if "," in header:
                     return ",", "."
                 if "\t" in header:
-                    return "\t", "."
-                if ";" not in header:
+                    sep = "\t"
+                elif ";" in header:
+                    sep = ";"
+                else:
                     return ",", "."
             while True:
                 chunk = handle.read(_SCAN_CHUNK)
                 if not chunk:
-                    return ";", "."
+                    return sep, "."
                 chunk += handle.readline()  # end the chunk at the end of a line
-                if _DECIMAL_COMMA.search(chunk):
-                    return ";", ","
+                if _DECIMAL_COMMA[sep].search(chunk):
+                    return sep, ","
     except _UNREADABLE:
         return ",", "."
 
@@ -563,7 +577,7 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
         # commas, 3,703.50 with decimal points); an ambiguous 2.500 is refused
         written = raw
         dotted = (0, 0)
-        if dots is not None and frame.attrs.get("csv_read") == (";", "."):
+        if dots is not None and frame.attrs.get("csv_read") in ((";", "."), ("\t", ".")):
             raw, *dotted = _settle_dots(raw, path, column, flag, dots)
         raw, count, first = _plain_number_text(raw, frame.attrs.get("decimal", "."), path,
                                                column)
@@ -719,8 +733,8 @@ def _settle_dots(raw: np.ndarray, path: str | Path, column: str, flag: str,
             raise DataError(
                 f"{_row(path, column, i)}: {shown(raw[i])} could be {plain} (a dot between "
                 f"thousands, as spreadsheets in many European locales write whole numbers) or "
-                f"{text} (a decimal point): in this semicolon-separated file without decimal "
-                f"commas every weight with a dot ({len(one)}) has exactly three digits after "
+                f"{text} (a decimal point): in this semicolon- or tab-separated file without decimal "
+                f"commas every value with a dot ({len(one)}) has exactly three digits after "
                 "it, so nothing tells which. Give --weight-dots thousands (read "
                 f"{plain}) or --weight-dots decimal (read {text}), or write the column "
                 f"without thousands separators ({flag})")
@@ -788,11 +802,19 @@ def probability_column(frame: Any, column: str, path: str | Path, *, flag: str,
         bad = (values < 0.0) | (values > 1.0)
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
-        if np.nanmin(values) >= 0.0 and np.nanmax(values) <= 100.0:
+        n_bad, n_read = int(bad.sum()), int(np.isfinite(values).sum())
+        if (np.nanmin(values) >= 0.0 and np.nanmax(values) <= 100.0
+                and n_bad >= max(2, PERCENT_SHARE * n_read)):
             # all in [0, 100] with some above 1: a share written in percent
             hint = (f"the column holds numbers from {shown(np.nanmin(values))} to "
-                    f"{shown(np.nanmax(values))}, which look like percentages: divide them by 100; for log-odds scores use "
-                    "--scale log-odds")
+                    f"{shown(np.nanmax(values))}, which look like percentages: divide them by "
+                    "100; for log-odds scores use --scale log-odds")
+        elif np.nanmin(values) >= 0.0:
+            # one stray value above 1 among probabilities is no percentage column (dividing
+            # every score by 100 was the advice): name how few they are
+            hint = (f"{n_bad} of {n_read} values lie above 1, the others in [0, 1]: correct "
+                    f"{'that row' if n_bad == 1 else 'those rows'} (a score above 1 is no "
+                    "probability); for log-odds scores use --scale log-odds")
         else:
             hint = "use --scale log-odds for log-odds scores"
         raise DataError(
@@ -824,18 +846,25 @@ def _number(value: Any) -> float | None:
 
 def read_labels(
     frame: Any, column: str, path: str | Path, *, positive: str | None = None,
-    flag: str = "--label-column",
+    flag: str = "--label-column", score_column: str | None = None,
+    score_flag: str = "--score-column",
 ) -> tuple[np.ndarray, list[Any]]:
     """Binary labels as 0/1 and the two original labels ``[negative, positive]``.
 
     Labels 0/1 (as numbers or text) and booleans have the positive class 1 / True unless
     ``positive`` says otherwise. Any other pair of labels (text such as ``damaged``/``intact``,
     or numbers such as 1/2) needs ``positive`` (the ``--positive-label`` option): which class
-    is "positive" is never guessed from the sort order.
+    is "positive" is never guessed from the sort order. ``score_column`` (given by
+    ``score_flag``) may not be the label column itself.
     """
     pd = require("pandas")
     if column not in frame.columns:
         raise no_column(frame, column, path, flag)
+    if score_column is not None and str(score_column) == str(column):
+        raise DataError(
+            f"{path}: {score_flag} and {flag} both name column {shown(column)}; the labels are "
+            f"the outcome of each row and the scores the model's probabilities for it, so they "
+            f"are two columns (the file has {', '.join(shown(c) for c in list(frame.columns)[:12])})")
     series = frame[column]
     missing = series.isna().to_numpy()
     if missing.any():
@@ -858,6 +887,11 @@ def read_labels(
             if _last_row_hint(values == values[-1]):
                 hint = (f"; {shown(values[-1])} is found only on the last row of the table: if "
                         "that row holds totals or notes, delete it (every row is read as data)")
+        if distinct.shape[0] == 1:  # "it holds 1: 1" read as a riddle
+            raise DataError(
+                f"{path}: column {shown(column)} ({flag}) must hold exactly two labels (binary "
+                f"outcome); it holds one label only, {shown_labels}, in all {values.shape[0]} "
+                "rows: both classes are needed (rows with and without the outcome)")
         raise DataError(
             f"{path}: column {shown(column)} must hold exactly two labels (binary outcome); it "
             f"holds {distinct.shape[0]}: {shown_labels}{more}{hint}"
