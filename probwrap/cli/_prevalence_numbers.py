@@ -200,8 +200,12 @@ def prevalence_from_reference(
     reference_weight: np.ndarray | None = None,
     cells: np.ndarray | None = None,
     reference_cells: np.ndarray | None = None,
+    reference_folds: int | None = None,
 ) -> dict[str, Any]:
     """Prevalence of unlabelled rows by :class:`probwrap.shift.PriorEstimator`.
+
+    ``reference_folds``: how many fold models scored the reference rows, for the check of
+    repeated rows (:func:`warn_repeated_scores`; None: read from the scores).
 
     ``sample_weight`` weights the unlabelled rows (``estimate``), ``reference_weight`` the
     reference rows (``fit``); the estimator counts both by Kish's effective size. ``cells`` /
@@ -231,7 +235,8 @@ def prevalence_from_reference(
     if cells is None:
         # rows repeating one another beyond the chance the reference rows show (resampled or
         # copied rows): the rule of PriorShiftWrapper.adapt and monitor (since 5 December 2026)
-        warn_repeated_scores(est, proba, ref_proba, ref_y, sample_weight)
+        warn_repeated_scores(est, proba, ref_proba, ref_y, sample_weight,
+                             reference_folds=reference_folds)
     # the estimator's two-sample score test (it carries the reference rows' error too)
     test = ShiftTestResult(res.shift_statistic, res.shift_pvalue, 1)
     out = result_dict(
@@ -263,13 +268,19 @@ def prevalence_from_reference(
 
 
 def warn_repeated_scores(est: Any, proba: np.ndarray, ref_proba: np.ndarray, ref_y: np.ndarray,
-                         sample_weight: np.ndarray | None = None) -> None:
+                         sample_weight: np.ndarray | None = None,
+                         reference_folds: int | None = None) -> None:
     """A :class:`~probwrap.shift.RepeatedRowsWarning` when the unlabelled scores repeat one
     another (exactly equal) far more often than independent draws do, by the rule of
     ``PriorShiftWrapper.adapt`` (:func:`probwrap.shift._repeats.repeats_of_rows`): the chance
     rate read from how often reference scores of each pair of classes coincide. Nothing
     without resamples (``est.n_resamples == 0``, as the wrapper). By batch, the warning of each
-    batch is shown once with how many more batches had it (``_by_batch``)."""
+    batch is shown once with how many more batches had it (``_by_batch``).
+
+    ``reference_folds`` (``--reference-folds``): the reference rows were scored by that many
+    fold models (out-of-fold scores), so their ties are read over the pairs of one fold; 1:
+    by one model. None: read as five fold models where the scores show that another model
+    scored them (``scored_by_other_models``), else as one."""
     from probwrap.shift._repeats import (
         REFERENCE_MODELS,
         RepeatedRowsWarning,
@@ -284,7 +295,12 @@ def warn_repeated_scores(est: Any, proba: np.ndarray, ref_proba: np.ndarray, ref
     ref = two_columns(ref_proba)
     y = np.asarray(ref_y).astype(int)
     counts = (*labelled_repeat_counts(ref, y, 2), *labelled_clumps(ref, y, 2))
-    if scored_by_other_models(ref_proba, proba):
+    if reference_folds is not None:
+        # the user says how the reference was scored (a ten-fold reference read as five fold
+        # models warned on 3 of 6 draws of distinct TitanicSurvival rows; session 26)
+        if reference_folds > 1:
+            counts = within_model_counts(counts, reference_folds)
+    elif scored_by_other_models(ref_proba, proba):
         # out-of-fold reference scores: they tie only within a fold, so their rate of ties is
         # read over the pairs of one fold (before 5 December 2026, session 25, over all pairs:
         # a warning on every draw of coarse scores such as carData Cowles and TitanicSurvival)
