@@ -288,3 +288,42 @@ def test_reference_folds_reads_a_ten_fold_reference(tmp_path, capsys):
               "--source-prevalence", "0.4", "--reference-folds", "10"])
     assert exit_info.value.code == 2
     assert "--reference-folds go with --reference" in capsys.readouterr().err
+
+
+def test_weight_dots_settle_thousands_in_a_file_with_decimal_commas(cancer, tmp_path, capsys):
+    """A ';' file with decimal commas whose weights are whole numbers with dots between
+    thousands (2.500): refused before with "write the column without thousands separators" and
+    no option; the message now names --weight-dots, which reads them, and two dot groups
+    (1.002.500), which can only be thousands, are read without it."""
+    counts = (cancer["w"] * 1000 + 1000).round().astype(int)  # 1,500 to 4,000
+    plain = tmp_path / "plain.csv"
+    cancer.assign(w=counts).to_csv(plain, index=False)
+    code, ref, err = _cutoff(capsys, plain, "--label-column", "y", "--weight-column", "w")
+    assert code == 0, err
+
+    def write(name, text):
+        lines = ["lr;y;w"] + [f"{repr(float(s)).replace('.', ',')};{y};{text(c)}"
+                              for s, y, c in zip(cancer["lr"], cancer["y"], counts, strict=True)]
+        path = tmp_path / name
+        path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+        return path
+
+    dotted = write("dots.csv", lambda c: f"{c // 1000}.{c % 1000:03d}")
+    code, _, err = _cutoff(capsys, dotted, "--label-column", "y", "--weight-column", "w")
+    assert code == 1
+    assert "column 'w'" in err and "--weight-dots thousands" in err and "(--weight-column)" in err
+    code, out, err = _cutoff(capsys, dotted, "--label-column", "y", "--weight-column", "w",
+                             "--weight-dots", "thousands")
+    assert code == 0, err
+    assert json.loads(out)["weights"] == json.loads(ref)["weights"]
+    assert json.loads(out)["cutoff"] == json.loads(ref)["cutoff"]
+    code, out, err = _cutoff(capsys, dotted, "--label-column", "y", "--weight-column", "w",
+                             "--weight-dots", "decimal")
+    assert code == 0, err
+    assert json.loads(out)["weights"]["sum"] == pytest.approx(json.loads(ref)["weights"]["sum"]
+                                                              / 1000)
+    many = write("many.csv", lambda c: f"1.{c // 1000:03d}.{c % 1000:03d}")
+    code, out, err = _cutoff(capsys, many, "--label-column", "y", "--weight-column", "w")
+    assert code == 0, err
+    assert json.loads(out)["weights"]["sum"] == pytest.approx(
+        1e6 * len(cancer) + json.loads(ref)["weights"]["sum"])

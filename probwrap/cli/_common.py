@@ -380,11 +380,11 @@ def add_weight_dots_flag(parser: argparse.ArgumentParser) -> None:
     """``--weight-dots``: how a dot in weights is read where the file cannot tell."""
     parser.add_argument(
         "--weight-dots", choices=("decimal", "thousands"), default=None,
-        help="how a dot in the weights (and in --time-column) is read in a semicolon- or "
-        "tab-separated file without decimal commas, where 2.500 may be 2.5 or 2500 (European "
-        "spreadsheets write whole numbers with dots between thousands): decimal reads 2.5, "
-        "thousands 2500; by default a column whose dotted values all have three digits after "
-        "the dot, with nothing else in it to settle it, is refused",
+        help="how a dot in the weights (and in --time-column) is read where 2.500 may be 2.5 "
+        "or 2500 (European spreadsheets write whole numbers with dots between thousands): in "
+        "a semicolon- or tab-separated file, with or without decimal commas; decimal reads "
+        "2.5, thousands 2500; by default such a column is refused unless its other values "
+        "settle it",
     )
 
 

@@ -111,13 +111,21 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                                               "sep_line": _has_sep_line(path, encoding)}
             elif decimal == ",":  # columns read as text keep their decimal commas: make dots
                 grouped = {}
+                deferred = {}
                 for column in set(exact) & set(frame.columns):
                     written = frame[column].to_numpy(dtype=object)
-                    fields, count, first = _plain_number_text(written, ",", path, column)
+                    try:
+                        fields, count, first = _plain_number_text(written, ",", path, column)
+                    except DataError:
+                        # 2.500: numeric_column settles it by --weight-dots (weights and
+                        # times) or refuses it, naming the column's option
+                        deferred[column] = written
+                        continue
                     frame[column] = pd.Series(fields, index=frame.index, dtype=object)
                     if count:
                         grouped[column] = (count, first, str(written[first]))
                 frame.attrs["grouped_numbers"] = grouped  # warned of by numeric_column
+                frame.attrs["dots_deferred"] = deferred
             # the separator and decimal mark the file was read with (weights whose dots
             # the file cannot settle: _settle_dots)
             frame.attrs["csv_read"] = (sep, decimal)
@@ -577,12 +585,17 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
         # commas, 3,703.50 with decimal points); an ambiguous 2.500 is refused
         written = raw
         dotted = (0, 0)
-        if dots is not None and frame.attrs.get("csv_read") in ((";", "."), ("\t", ".")):
-            raw, *dotted = _settle_dots(raw, path, column, flag, dots)
-        raw, count, first = _plain_number_text(raw, frame.attrs.get("decimal", "."), path,
-                                               column)
-        if dotted[0]:
-            count, first = dotted
+        deferred = frame.attrs.get("dots_deferred", {})
+        if column in deferred:  # 2.500 with decimal commas: settled by dots, or refused
+            raw, count, first = _plain_number_text(deferred[column], ",", path, column,
+                                                   dots=dots, flag=flag)
+        else:
+            if dots is not None and frame.attrs.get("csv_read") in ((";", "."), ("\t", ".")):
+                raw, *dotted = _settle_dots(raw, path, column, flag, dots)
+            raw, count, first = _plain_number_text(raw, frame.attrs.get("decimal", "."), path,
+                                                   column)
+            if dotted[0]:
+                count, first = dotted
         grouped = ((count, first, str(written[first])) if count else
                    frame.attrs.get("grouped_numbers", {}).get(column))
         try:
@@ -627,7 +640,8 @@ _COMMA_GROUPS_DOT = re.compile(r"[-+]?[1-9]\d{0,2}(?:,\d{3})+\.\d+")
 
 
 def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
-                       column: str) -> tuple[np.ndarray, int, int]:
+                       column: str, *, dots: str | None = None,
+                       flag: str | None = None) -> tuple[np.ndarray, int, int]:
     """Text fields of a number column with a decimal point and no thousands separators.
 
     ``decimal``: the file's decimal mark. With ``","`` every comma of a number becomes a point,
@@ -639,6 +653,11 @@ def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
     are dropped, since a space is never a decimal mark. Any other field is left as written for
     the number parser to judge (and a message to show as written). Returns the fields, how many
     lost separators, and the first such row.
+
+    ``dots`` (``--weight-dots``, for the weight and time columns ``flag`` names) settles a
+    ``2.500`` in a file with decimal commas: ``"thousands"`` reads 2500, ``"decimal"`` 2.5;
+    ``"ask"``: refused, the message naming the option. Two or more dot groups (``1.234.567``)
+    can only be thousands, and lose their dots.
     """
     out = raw.copy()
     count, first = 0, 0
@@ -661,13 +680,25 @@ def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
                 out[i] = text.replace(".", "").replace(",", ".")
             elif _DOT_GROUPS.fullmatch(text):
                 plain = text.replace(".", "")
-                raise DataError(
-                    f"{_row(path, column, i)}: {shown(value)} could be {plain} (a dot between "
-                    f"thousands, as written with the decimal comma this file uses) or {text} "
-                    "(a decimal point): it cannot be told which; write the column without "
-                    "thousands separators"
-                )
+                if dots == "decimal":
+                    out[i] = text
+                    continue
+                if dots != "thousands" and not _DOT_GROUPS_MANY.fullmatch(text):
+                    option = (f"; give --weight-dots thousands (read {plain}) or --weight-dots "
+                              f"decimal (read {text}) ({flag})" if dots == "ask" else "")
+                    raise DataError(
+                        f"{_row(path, column, i)}: {shown(value)} could be {plain} (a dot "
+                        f"between thousands, as written with the decimal comma this file uses) "
+                        f"or {text} (a decimal point): it cannot be told which; write the "
+                        f"column without thousands separators{option}"
+                    )
+                out[i] = plain
             else:
+                if dots == "thousands" and "." in text and _is_number(text.replace(",", ".")):
+                    raise DataError(
+                        f"{_row(path, column, i)}: {shown(value)} is not a whole number with "
+                        f"dots between thousands, as {flag} is read with --weight-dots "
+                        "thousands")
                 point = value.replace(",", ".")  # a point already there is left as written
                 if _is_number(point):
                     out[i] = point
