@@ -32,6 +32,11 @@ from ._estimate import (
     prior_log_likelihood,
 )
 from ._estimator import CALIBRATIONS, INTERVALS, PRIOR_METHODS, PriorEstimator
+from ._feature_mix import (
+    FeatureMixtureMisfit,
+    FeatureMixtureMisfitWarning,
+    feature_mixture_misfit,
+)
 from ._interval import bca_interval, jackknife_acceleration, score_interval
 from ._mixture_fit import ClassMixtureMisfitWarning, class_mixture_misfit
 from ._repeats import RepeatedRowsWarning
@@ -42,6 +47,9 @@ __all__ = [
     "BoundaryPriorWarning",
     "ClassMixtureMisfitWarning",
     "class_mixture_misfit",
+    "FeatureMixtureMisfit",
+    "FeatureMixtureMisfitWarning",
+    "feature_mixture_misfit",
     "PriorIntervalConflictWarning",
     "FewLabelledRowsWarning",
     "ImprecisePriorWarning",
