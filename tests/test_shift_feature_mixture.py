@@ -63,9 +63,9 @@ def test_rank_statistic_is_scipys_mann_whitney_with_ties():
 
 def test_level_on_batches_drawn_by_class():
     # 120 breast-cancer batches of 100 rows at x0.5, x1 and x1.4 the labelled benign share:
-    # prior shift holds, so about 1.2 batches fire at 1 % and 6 at 5 %. Measured 1 and 4.
+    # prior shift holds, so about 1.2 batches fire at 1 % and 6 at 5 %. Measured 0 and 5.
     # Pooling the two folds as if independent (the variance understated by about half) fired
-    # on 4 at 1 % (checked); without the class re-weighting, on 29.
+    # on 5 and 17 (checked); without the class re-weighting on 15 and 39.
     p = []
     for seed in range(40):
         for mult in (0.5, 1.0, 1.4):
@@ -74,7 +74,7 @@ def test_level_on_batches_drawn_by_class():
                                             level=None).pvalue)
     p = np.array(p)
     assert (p < 0.01).sum() <= 2
-    assert (p < 0.05).sum() <= 7
+    assert (p < 0.05).sum() <= 9
     assert 0.35 < np.median(p) < 0.75  # not just conservative everywhere
 
 
@@ -91,7 +91,7 @@ def test_power_on_a_texture_subgroup_the_score_checks_miss():
         assert fired == (res.pvalue < 0.01)
         assert res.auc > 0.6
         flagged += fired
-    assert flagged >= 7  # measured 8 of 10
+    assert flagged >= 9  # measured 10 of 10 (8 without the squared features)
 
 
 def test_the_class_reweighting_is_what_keeps_a_change_of_share_quiet():
@@ -108,8 +108,8 @@ def test_the_class_reweighting_is_what_keeps_a_change_of_share_quiet():
         quiet.append(est.pvalue)
         loud.append(feature_mixture_misfit(X_BC[lab], Y_BC[lab], X_BC[batch], level=None,
                                            prior=source).pvalue)
-    assert min(quiet) > 0.1  # measured 0.14
-    assert np.median(loud) < 0.06 and sum(p < 0.01 for p in loud) >= 2  # measured 0.05, 3
+    assert min(quiet) > 0.1 and np.median(quiet) > 0.4  # measured 0.18, 0.58
+    assert np.median(loud) < 0.2 and sum(p < 0.05 for p in loud) >= 3  # measured 0.14, 3
 
 
 def test_weights_are_relative_and_scale_free_and_features_scale_free():
@@ -151,6 +151,9 @@ def test_weights_are_honoured_rows_of_weight_zero_take_no_part():
         full = feature_mixture_misfit(X_BC[lab], Y_BC[lab], rows, level=None)
         assert zero.pvalue > 0.05 and full.pvalue < 0.01
         assert zero.effective_rows[0] == pytest.approx(100.0)
+        dropped = feature_mixture_misfit(X_BC[lab], Y_BC[lab], X_BC[batch], level=None)
+        assert zero.pvalue == pytest.approx(dropped.pvalue, rel=1e-5)
+        np.testing.assert_allclose(zero.prior, dropped.prior, rtol=1e-5)
 
 
 def test_prior_from_an_adapted_wrapper_and_an_array():

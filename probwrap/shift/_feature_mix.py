@@ -163,6 +163,18 @@ def _weighted_auc(s_u: np.ndarray, w_u: np.ndarray, s_l: np.ndarray,
     return auc, var
 
 
+def _with_squares(Z_l, Z_u, w_l0, w_u):
+    """Each standardized feature's square beside it (standardized the same way, constant
+    columns left out): a band or a cut in one feature changes its spread, not its mean."""
+    sq_l, sq_u = Z_l**2, Z_u**2
+    pooled = np.vstack([sq_l[w_l0 > 0], sq_u[w_u > 0]])
+    centre, spread = pooled.mean(axis=0), pooled.std(axis=0)
+    keep = spread > 1e-9
+    sq_l = (sq_l[:, keep] - centre[keep]) / spread[keep]
+    sq_u = (sq_u[:, keep] - centre[keep]) / spread[keep]
+    return np.hstack([Z_l, sq_l]), np.hstack([Z_u, sq_u])
+
+
 def _scores(model: Any, X: np.ndarray) -> np.ndarray:
     if hasattr(model, "predict_proba"):
         p = np.asarray(model.predict_proba(X), dtype=float)
@@ -241,7 +253,9 @@ def feature_mixture_misfit(
         Tells the two sides apart; cloned and fitted once per fold with ``sample_weight`` (it
         must accept it), on features standardized by the pooled rows' mean and standard
         deviation. Its ``predict_proba`` (last column) or ``decision_function`` scores the
-        held-out rows. None: ``LogisticRegression()``.
+        held-out rows. None: ``LogisticRegression()`` on the standardized features and their
+        squares (standardized too), so that a band or a cut in one feature, which changes its
+        spread more than its mean, is seen as well as a slide.
     sample_weight : array-like of shape (n,), default=None
         Relative weights of the unlabelled rows (Kish's effective count is their number).
     labelled_sample_weight : array-like of shape (m,), default=None
@@ -321,6 +335,7 @@ def feature_mixture_misfit(
         raise ValueError(f"`folds` must be an integer of at least 2; got {folds!r}.")
     if level is not None and not 0 < float(level) < 1:
         raise ValueError(f"`level` must lie strictly between 0 and 1, or be None; got {level!r}.")
+    default_discriminator = discriminator is None
     if discriminator is None:
         discriminator = LogisticRegression(max_iter=2000)
     elif not has_fit_parameter(discriminator, "sample_weight"):
@@ -329,13 +344,16 @@ def feature_mixture_misfit(
                         "class shares. Pass the classifier itself, not a Pipeline (the "
                         "features are standardized here).")
 
-    # standardize on the pooled rows (no side labels used, so no leak into held-out rows)
-    pooled = np.vstack([X_l, X_u])
+    # standardize on the pooled rows of positive weight (no side labels used, so nothing
+    # leaks into held-out rows)
+    pooled = np.vstack([X_l[w_l0 > 0], X_u[w_u > 0]])
     centre, spread = pooled.mean(axis=0), pooled.std(axis=0)
     spread[spread <= 1e-12 * np.maximum(np.abs(centre), 1.0)] = 1.0
     Z_l, Z_u = (X_l - centre) / spread, (X_u - centre) / spread
 
     p = _resolve_prior(prior, classes, Z_l, y_idx, w_l0, Z_u, w_u, source)
+    if default_discriminator:
+        Z_l, Z_u = _with_squares(Z_l, Z_u, w_l0, w_u)
     w_l = w_l0 * (p / source)[y_idx]
 
     # rows of weight 0 take part in nothing
