@@ -131,6 +131,9 @@ TAIL_CHOICE_MAX_ROWS = 200
 
 #: At most this many folds for the choice (leave-one-out below it).
 _TAIL_FOLDS = 20
+# relative margin by which the compressed tail's gain must pass one standard error (a tie, as
+# with a single differing row, is not a gain; far above rounding, far below any real gain)
+_TIE_MARGIN = 1e-9
 
 
 def compress_tail(log_proba: np.ndarray, start: float, width: float) -> np.ndarray:
@@ -216,7 +219,12 @@ def choose_tail(
     n_eff = 1.0 / float(np.sum(ww**2))
     se = float(np.sqrt(max(float(ww @ (d - mean) ** 2), 0.0) * n_eff / max(n_eff - 1.0, 1.0)
                        / n_eff))
-    return (floor, start, width) if mean > se else flat
+    # "better by more than one standard error" with a margin for rounding: where the two
+    # features differ on a single row, the mean difference equals its standard error exactly
+    # (d / n both), and a bare ``mean > se`` then followed the last bits of the arithmetic, so
+    # the weights' scale chose the tail (R's wooldridge htv, frozen logistic regression, 150
+    # labelled rows: weights 1 flat, the same weights 1/150 compressed). A tie keeps the flat floor.
+    return (floor, start, width) if mean > se * (1.0 + _TIE_MARGIN) else flat
 
 
 def _log_softmax(u: np.ndarray, axis: int = 1) -> np.ndarray:
