@@ -127,8 +127,15 @@ def class_mixture_misfit(
         raise ValueError(f"`bins` must be at least 3; got {bins!r}.")
     # edges: the labelled rows' weighted quantiles (equal shares of the pooled labelled rows)
     order = np.argsort(s, kind="stable")
-    cum = np.cumsum(w_s[order]) / w_s.sum()
-    edges = np.interp(np.arange(1, k) / k, cum, s[order])
+    # the cumulative shares from weights over their largest (equal weights at any scale are
+    # then exactly 1), rounded to 12 digits with the quantiles: a quantile landing on a knot
+    # picks that knot's score at every scale of the weights. Before, weights 1/n summed to a
+    # knot a last bit off, the edge fell on the other side of a score many rows share, and
+    # the scale of the labelled weights moved the p-value across the 1 % level (R's
+    # mosaicData Galton, naive Bayes, 150 labelled rows: 0.0089 at weights 1, 0.0103 at 1/150)
+    u = w_s[order] / w_s.max()
+    cum = np.round(np.cumsum(u) / u.sum(), 12)
+    edges = np.interp(np.round(np.arange(1, k) / k, 12), cum, s[order])
     h = np.bincount(np.searchsorted(edges, t), weights=w_t, minlength=k) / w_t.sum()
     b_s = np.searchsorted(edges, s)
     a, cov = [], []
