@@ -96,9 +96,12 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         ``cost_curve_.cutoff``). With at most 20,000 held-out rows in memory, that plug-in
         cutoff is first carried back through a calibration map chosen on the held-out rows
         (the model's own probabilities unless a map fits them better by more than a standard
-        error, or, on at most 300 held-out rows with at least 10 of each class, unless Platt
-        scaling fits them better at all; ``cutoff_anchor_``); otherwise per-class offsets on the log-probability scale fitted
-        the same way. ``"fixed"``: use ``cutoff`` as given, so that a search can tune it.
+        error; on at most 300 held-out rows with at least 5 of each class, Platt scaling in
+        their place where its fit increases and flags every held-out row or none at the
+        plug-in cutoff; ``cutoff_anchor_``); otherwise per-class
+        offsets on the log-probability scale fitted the same way. A tuned cutoff that acts on
+        every held-out row or on none, where Platt scaling with the plug-in cutoff would not,
+        is warned about. ``"fixed"``: use ``cutoff`` as given, so that a search can tune it.
     cutoff : float or array-like of shape (n_classes,), default=None
         With ``strategy="fixed"``: the probability cutoff (binary: the second action is taken when
         ``p > cutoff``), or, for more classes, actions or per-row costs, per-class offsets on the

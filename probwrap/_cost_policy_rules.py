@@ -74,6 +74,18 @@ PLATT_ANCHOR_MAX_ROWS = 300
 #: test cost 1.54x the plug-in cutoff's (benchmarks/cost_newer_sets.py --quick).
 PLATT_ANCHOR_MIN_CLASS_ROWS = 10
 
+#: Session 26: on at most ``PLATT_ANCHOR_MAX_ROWS`` held-out rows with at least this many of each
+#: class (``FEW_CLASS_ROWS``, Cochran 1954, below which the tuned fit already warns), the anchor
+#: goes through Platt scaling wherever ``auto`` kept the model's own probabilities, Platt's fit
+#: on the held-out rows increases and it puts every held-out row on one side of the plug-in
+#: value (its plug-in rule flags all of them or none), whatever the folds' log losses
+#: (:func:`_platt_over_identity`), besides where it scored the lower log loss with
+#: ``PLATT_ANCHOR_MIN_CLASS_ROWS`` rows of each class (sessions 22-25). False restores the rule
+#: of sessions 22-25 alone, for
+#: the before and after of docs/decisions.md, "Few positives and coarse frozen models".
+_PLATT_WHEN_OWN_KEPT = True
+PLATT_DEFAULT_MIN_CLASS_ROWS = 5
+
 #: A map that orders no cutoff on the held-out probabilities (the class shares, or a decreasing
 #: map) but puts every probability on one side of the plug-in value anchors the tuned cutoff at
 #: that one decision (flag no row / every row); False restores the rule before session 24, the
@@ -95,7 +107,7 @@ def recalibrated_plugin_cutoff(
     """The plug-in cutoff ``t0`` carried back to the scale of the held-out probabilities ``p``
     through the map ``CalibrationWrapper(method="auto")`` chooses for them on the same rows (the
     model's own probabilities among the candidates, first; replaced by Platt scaling on small
-    sets where Platt scored better, :func:`_platt_over_identity`): the cutoff ``c`` with
+    sets, :func:`_platt_over_identity`): the cutoff ``c`` with
     ``map(p) > t0`` exactly where ``p > c``. A map that orders no cutoff (the class shares,
     chosen when the scores rank nothing out of fold, or a decreasing map) but puts every
     probability on one side of ``t0`` gives the cutoff of that one decision: 1 (flag no row) or
@@ -160,7 +172,7 @@ def recalibrated_plugin_cutoff(
         # evidence is no better an anchor than the plug-in cutoff itself
         return t0, None
     if cw.method_ == "identity":
-        platt = _platt_over_identity(cw, p[keep], y[keep], w[keep])
+        platt = _platt_over_identity(cw, p[keep], y[keep], w[keep], t0)
         if platt is None:
             return t0, "identity"
         cw = platt
@@ -234,7 +246,7 @@ def _flag_all_cutoff(u: np.ndarray) -> float:
     return float(-0.5 * gap)
 
 
-def _platt_over_identity(cw: Any, p, y, w) -> Any:
+def _platt_over_identity(cw: Any, p, y, w, t0: float) -> Any:
     """Platt scaling fitted on the held-out rows, when the one-standard-error rule kept the
     model's own probabilities for the anchor although Platt scaling (scikit-learn's sigmoid, the
     regularised map) scored a lower cross-validated log loss on the same folds; else None.
@@ -248,10 +260,26 @@ def _platt_over_identity(cw: Any, p, y, w) -> Any:
     0.079), so the anchor was the plug-in cutoff 0.2 on the forest's scores, which the test
     could not reject on 6 rows between the cutoffs, and the test cost was 0.66 a row against
     0.24 for scikit-learn's sigmoid with the plug-in cutoff (docs/small_data.md, costfall).
-    Only the point estimates are compared here: the own probabilities stay wherever the rows
-    score them at least as well as the sigmoid, on more than ``PLATT_ANCHOR_MAX_ROWS`` rows
-    (where one standard error is narrow and the one-standard-error rule decides) and with fewer
-    than ``PLATT_ANCHOR_MIN_CLASS_ROWS`` rows of a class (where Platt's fit is noise)."""
+    Until session 26 only the point estimates were compared: the own probabilities stayed
+    wherever the rows scored them at least as well as the sigmoid, or a class had fewer than
+    ``PLATT_ANCHOR_MIN_CLASS_ROWS`` rows. That kept them where the fold scores cannot tell
+    and the decision goes wrong: a 40-row frozen forest on iraqVote with 8-10 negatives (the
+    anchor on the forest's own scores in 20 of 40 draws, 0.463 a row against the sigmoid's
+    0.235), MathPlacement's forest cross-fitted on 40 rows, and a depth-3 tree on 150 rows of
+    ResumeNames, whose coarse own probabilities won the fold log loss while their cutoff 0.2
+    flagged a small overfitted leaf. (That rule stays.) In each, Platt scaling (the regularised map scikit-learn
+    defaults to) fitted on the held-out rows finds too little in the scores to carry any of
+    them across the plug-in value ``t0``: its plug-in rule flags every row or none, while
+    the own probabilities' cutoff splits the rows on a ranking the rows cannot support. Now
+    (``_PLATT_WHEN_OWN_KEPT``) Platt scaling also replaces them on at most
+    ``PLATT_ANCHOR_MAX_ROWS`` rows with at least ``PLATT_DEFAULT_MIN_CLASS_ROWS`` (5) of each
+    class whenever its fit increases and puts every held-out row on one side of ``t0``; where
+    it splits the rows too, the own probabilities stay (Platt in place of them everywhere
+    fixed the same cells but made ``benchmarks/tuned_cost_cells.py h23`` worse: geometric mean
+    0.9614 -> 0.9711, worst cell 1.51 -> 2.81, on well-ranked 40-row sets such as ais). The
+    settling test still moves the cutoff wherever the rows show the anchor costs more. Above ``PLATT_ANCHOR_MAX_ROWS`` rows
+    one standard error is narrow and the one-standard-error rule decides; below 5 rows of a
+    class Platt's fit is noise (ACTG320, 3 deaths among 40 rows) and the fit warns."""
     import warnings
 
     from sklearn.frozen import FrozenEstimator
@@ -263,22 +291,34 @@ def _platt_over_identity(cw: Any, p, y, w) -> Any:
                else (np.asarray(w) > 0).astype(np.int64))
     if int(counted.sum()) > PLATT_ANCHOR_MAX_ROWS:
         return None
-    if (np.bincount(np.asarray(y, dtype=np.intp), weights=counted, minlength=2).min()
-            < PLATT_ANCHOR_MIN_CLASS_ROWS):
-        return None
+    fewest = np.bincount(np.asarray(y, dtype=np.intp), weights=counted, minlength=2).min()
     scores = cw.method_scores_
-    if "platt" not in scores or "identity" not in scores or "platt" in cw.method_notes_:
-        return None  # not scored, or not eligible (a fit at a boundary of its parameters)
-    if not scores["platt"][0] < scores["identity"][0]:
+    scored_lower = (
+        fewest >= PLATT_ANCHOR_MIN_CLASS_ROWS
+        and "platt" in scores and "identity" in scores and "platt" not in cw.method_notes_
+        and scores["platt"][0] < scores["identity"][0]
+    )  # (not scored, or not eligible: a fit at a boundary of its parameters)
+    if not scored_lower and not (_PLATT_WHEN_OWN_KEPT and fewest >= PLATT_DEFAULT_MIN_CLASS_ROWS):
         return None
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            return CalibrationWrapper(
+            platt = CalibrationWrapper(
                 FrozenEstimator(ProbabilityColumn().fit()), method="platt"
             ).fit(p[:, None], y, sample_weight=w)
     except ValueError:
         return None
+    if scored_lower:
+        return platt
+    # session 26: Platt's plug-in rule puts every held-out row on one side of t0
+    if not platt.calibrator_.slope_ > 0:
+        return None  # a flat or decreasing fit orders no cutoff: the own probabilities stay
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        above = platt.predict_proba(np.unique(p)[:, None])[:, 1] > t0
+    if above.any() and not above.all():
+        return None  # Platt splits the held-out rows too: the own probabilities stay
+    return platt
 
 
 class _RuleFitting:
@@ -387,6 +427,52 @@ class _RuleFitting:
             stacklevel=4,
         )
 
+    def _warn_all_or_none(self, p, y, w, t0: float) -> None:
+        """Say so when the tuned cutoff acts on every held-out row or on none while Platt
+        scaling fitted on the same rows, with the plug-in cutoff ``t0`` (scikit-learn's sigmoid
+        and the plug-in rule: the simple regularised default), would act on some but not all of
+        them. On a few dozen rows such a rule can pass the settling test on no evidence (every
+        row flagged when a decreasing map, or one fitted on a handful of rows of a class, lifts
+        every probability above ``t0``), and nothing in the fit said so. Only on at most
+        ``SMALL_HELDOUT_ROWS`` held-out rows (beyond, the test has the power to reject an
+        all-or-nothing rule that costs more) and when the scores rank the rows
+        (``_warn_constant`` speaks otherwise)."""
+        keep = w > 0
+        q = p[keep]
+        if q.size < 2 or q.size > SMALL_HELDOUT_ROWS or q.min() == q.max():
+            return
+        every = self.cutoff_ < q.min()
+        if not every and self.cutoff_ < q.max():
+            return
+        from sklearn.frozen import FrozenEstimator
+
+        from ._calibration_wrapper import CalibrationWrapper
+
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                platt = CalibrationWrapper(
+                    FrozenEstimator(ProbabilityColumn().fit()), method="platt"
+                ).fit(q[:, None], y[keep], sample_weight=w[keep])
+                flagged = platt.predict_proba(q[:, None])[:, 1] > t0
+        except ValueError:
+            return
+        share = float(w[keep] @ flagged) / float(w[keep].sum())
+        if (every and share >= 1.0) or (not every and share <= 0.0):
+            return
+        counts = np.bincount(np.asarray(y)[keep], minlength=2)
+        warnings.warn(
+            f"{type(self).__name__}(strategy='tuned'): the tuned cutoff ({self.cutoff_:.6g}) "
+            f"acts on {'every held-out row' if every else 'none of the held-out rows'}, while "
+            f"Platt scaling fitted on the same rows with the plug-in cutoff ({t0:.6g}) would "
+            f"act on {share:.0%} of them (by weight). The held-out rows ({int(keep.sum())}: "
+            f"{int(counts[0])} of {plain(self.classes_[0])!r}, {int(counts[1])} of "
+            f"{plain(self.classes_[1])!r}) did not show the difference to cost more; check "
+            "the rule on more labelled rows before acting on it.",
+            UserWarning,
+            stacklevel=4,
+        )
+
     def _warn_few_class_rows(self, ho) -> None:
         """Say so when a class has at least one but fewer than ``FEW_CLASS_ROWS`` (5, Cochran
         1954, as ``CalibrationWrapper`` and ``PriorShiftWrapper``) held-out rows of weight > 0
@@ -488,6 +574,8 @@ class _RuleFitting:
                 self.cutoff_ = _cutoff_at_bin_edge(self.tally_, self.cutoff_)
             else:
                 self._warn_constant(p, ho.sample_weight, ho.fold)
+                if share is None:
+                    self._warn_all_or_none(p, ho.y_index, ho.sample_weight, plugin_cutoff(matrix))
             self.cost_curve_ = res
             del res
             if keep:
