@@ -37,7 +37,8 @@ cutoff 0.2 on the sigmoid's probabilities), weights all one against all ``1 / n`
 Added here: ``PriorShiftWrapper(model).fit(rows).predict_proba`` before any ``adapt`` (column
 ``psw``), flagged like the calibration (exact 0/1, above 1.10x the sigmoid and 0.01 nats).
 
-Run: ``nice python benchmarks/hunt26_sweep.py --quick`` (six sets), ``nice python
+Run: ``nice python benchmarks/hunt26_sweep.py --quick`` (six sets, 100 cells: 576 s on the shared
+machine at a load of 20), ``nice python
 benchmarks/hunt26_sweep.py`` (every set, one draw: the table of ``docs/small_data.md``, the
 session-26 hunt), ``--sets solder,vlt``, ``--modes frozen``, ``--models nb``, ``--sizes 40``,
 ``--seeds 20``, ``--first-seed 1``, ``--no-weights``, ``--no-psw``, ``--csv FILE``,
