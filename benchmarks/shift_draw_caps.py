@@ -13,7 +13,17 @@ loss to 1e-15). Rules are written against the share *before* the session-23 cap
     PYTHONPATH=$PWD nice python benchmarks/shift_draw_caps.py capture unpicked 200 lr,nb
     PYTHONPATH=$PWD nice python benchmarks/shift_draw_caps.py capture unpicked-mc 60 lr,nb
     PYTHONPATH=$PWD nice python benchmarks/shift_draw_caps.py capture draws ad_data lr 120
+    PYTHONPATH=$PWD nice python benchmarks/shift_draw_caps.py capture hunt25 SET,SET|all SEEDS TAG
+    PYTHONPATH=$PWD nice python benchmarks/shift_draw_caps.py capture hunt24 SET,SET|all SEEDS TAG
     PYTHONPATH=$PWD python benchmarks/shift_draw_caps.py score FILE.pkl [RULE ...]
+    PYTHONPATH=$PWD python benchmarks/shift_draw_caps.py band FILE.pkl [FILE.pkl ...]
+
+``hunt24`` / ``hunt25`` use the cells of ``benchmarks/shift_real_hunt24.py`` /
+``shift_real_hunt25.py`` (the named sets in that order; the file is rewritten after every set).
+``band`` scores the session-26 rules for weak evidence between p = 0.05 and 0.10 (a warning
+only, caps tapering from 2 % at p = 0.10 to none at 0.05, a limit scaled by a Bayes-factor
+bound, a hard cap at 0.05; docs/prior_shift.md, "Weak-evidence draws between p = 0.05 and 0.10
+(session 26)").
 
 Files go to ``--dir`` (default /tmp/shift_draw_caps). ``evidence`` repeats the draws of
 ``benchmarks/shift.py --quick --only=evidence``; ``hunt22`` / ``unpicked`` use the split and
@@ -89,7 +99,7 @@ def evidence(seed=0, quick=True):
     return out
 
 
-def hunt(seeds=2, source=None):
+def hunt(seeds=2, source=None, save=None):
     import shift_real_hunt22 as h
     recs = []
     orig = h.log_loss
@@ -126,8 +136,61 @@ def hunt(seeds=2, source=None):
                 h.one(name, X, y, m, seed, kinds, weighted and m == models[0], rows)
                 assert len(rows) - n0 == len(recs) - nr0, (name, m, seed)
         print(name, time.strftime("%H:%M:%S"), flush=True)
-    for r, d in zip(rows, recs, strict=True):
-        d["row"] = r
+        for r, d in zip(rows, recs, strict=True):
+            d["row"] = r
+        if save is not None:  # after every set, so that an interrupted run keeps what it has
+            with open(save, "wb") as f:
+                pickle.dump(recs, f)
+    return recs
+
+
+def hunt24(module="shift_real_hunt25", seeds=2, names=None, models=("lr", "rf", "nb"),
+           save=None):
+    """The cells of ``benchmarks/shift_real_hunt24.py`` (or ``shift_real_hunt25.py``, which runs
+    the same cells on other sets): per cell the wrapper fitted with weights all one, its state,
+    the unlabelled rows' calibrated posteriors and labels, and the cell's row of the hunt."""
+    import importlib
+
+    import shift_real_hunt24 as h24
+    mod = importlib.import_module(module)
+    recs, rows, crashes, skipped = [], [], [], []
+    last, calls = {}, {"n": 0}
+    orig_pair, orig_ll = h24.adapt_pair, h24.log_loss
+
+    def adapt_pair(pair, Xu):
+        res = orig_pair(pair, Xu)
+        if not isinstance(res, str):
+            last["d"] = state(res[0], len(res[0].classes_))
+        return res
+
+    def ll(y, P, classes):
+        if calls["n"] % 3 == 0:  # P0 (no adjustment) comes first of the three
+            d = dict(last["d"])
+            d.update(y=np.searchsorted(classes, y).astype(np.int16), P0=np.asarray(P, float))
+            recs.append(d)
+        calls["n"] += 1
+        return orig_ll(y, P, classes)
+
+    h24.adapt_pair, h24.log_loss = adapt_pair, ll
+    data = mod.sets()
+    if names:  # in the order named
+        data = [t for s in names for t in data if s.lower() in t[0].lower()]
+    for name, X, y in data:
+        for seed in range(seeds):
+            for m in models:
+                n0, nr0 = len(rows), len(recs)
+                try:
+                    h24.one(name, X, y, m, seed, rows, crashes, skipped)
+                except Exception as e:  # noqa: BLE001 (the script's own draw)
+                    print("script error", name, m, seed, e, flush=True)
+                    del rows[n0:], recs[nr0:]
+                assert len(rows) - n0 == len(recs) - nr0, (name, m, seed)
+        print(name, time.strftime("%H:%M:%S"), flush=True)
+        for r, d in zip(rows, recs, strict=True):
+            d["row"] = r
+        if save is not None:  # after every set, so that an interrupted run keeps what it has
+            with open(save, "wb") as f:
+                pickle.dump(recs, f)
     return recs
 
 
@@ -262,6 +325,158 @@ def make_rules():
     return rules
 
 
+P_CAP, P_WEAK = 0.10, 0.05  # the cap's level since session 23; the band's lower end
+
+
+def in_band(d):
+    """Weak evidence below the cap's level: ``0.05 <= p < 0.10``."""
+    p = d["pvalue"]
+    return bool(np.isfinite(p) and P_WEAK <= p < P_CAP)
+
+
+def kept_w(d):
+    """The library's share since session 23: capped at 2 % where ``p >= 0.10``."""
+    return _cap(d, DRAW_HARM_LIMIT, P_CAP)
+
+
+def _limit_cap(d, limit_of_p):
+    """Cap at ``limit_of_p(p)`` where ``p < 0.10`` (2 % at and above it, as kept)."""
+    p = d["pvalue"]
+    if not np.isfinite(p) or p >= P_CAP:
+        return kept_w(d)
+    lim = limit_of_p(p)
+    return base_w(d) if not np.isfinite(lim) else cap_w(d, base_w(d), lim)
+
+
+def taper_hyperbolic(p):
+    """2 % at p = 0.10, rising as 1 / (p - 0.05) to no limit at 0.05."""
+    return DRAW_HARM_LIMIT * (P_CAP - P_WEAK) / (p - P_WEAK) if p > P_WEAK else np.inf
+
+
+def taper_log(p):
+    """2 % at p = 0.10, rising as 1 / log(p / 0.05) to no limit at 0.05."""
+    return DRAW_HARM_LIMIT * np.log(P_CAP / P_WEAK) / np.log(p / P_WEAK) if p > P_WEAK else np.inf
+
+
+def _taper_share(d):
+    """The share itself interpolated linearly in p between the capped share (p = 0.10) and the
+    free one (p = 0.05)."""
+    p, w0 = d["pvalue"], base_w(d)
+    if not np.isfinite(p) or p >= P_CAP:
+        return kept_w(d)
+    if p <= P_WEAK:
+        return w0
+    wc = cap_w(d, w0, DRAW_HARM_LIMIT)
+    return wc + (w0 - wc) * (P_CAP - p) / (P_CAP - P_WEAK)
+
+
+def null_posterior_floor(p):
+    """Sellke, Bayarri & Berger (2001, eq. 3): for p < 1/e the Bayes factor for the precise
+    null is at least ``-e p ln p`` over a wide class of alternatives; with even prior odds the
+    probability of "no shift" given the data is at least ``1 / (1 + 1 / B)``."""
+    p = float(np.clip(p, 1e-300, np.exp(-1)))
+    b = -np.e * p * np.log(p)
+    return b / (1.0 + b)
+
+
+def taper_bayes(p):
+    """Expected harm under "no shift", weighted by the floor of its probability, held where
+    the kept cap holds it at p = 0.10: ``2 % * pi0(0.10) / pi0(p)``."""
+    return DRAW_HARM_LIMIT * null_posterior_floor(P_CAP) / null_posterior_floor(p)
+
+
+def warn_kept(d, w):
+    """NoShiftHarmWarning as the library raises it: on the share before the cap, p >= 0.10."""
+    return warned_harm(d, base_w(d))
+
+
+def warn_band(d, w):
+    """The kept warning, and also where 0.05 <= p < 0.10 and the share before any cap would
+    raise a no-shift draw's log loss by more than 2 %."""
+    w0 = base_w(d)
+    return warn_kept(d, w) or (in_band(d) and w0 > 0 and harm(d, w0) > DRAW_HARM_LIMIT)
+
+
+def warn_band_applied(d, w):
+    """As :func:`warn_band`, on the share applied (after the rule's own cap)."""
+    return warn_kept(d, w) or (in_band(d) and w > 0 and harm(d, w) > DRAW_HARM_LIMIT)
+
+
+def band_rules():
+    """Name -> (share rule, warning rule) for the session-26 comparison (0.05 <= p < 0.10)."""
+    from functools import partial
+
+    out = {"kept (cap 2 % where p >= 0.10)": (kept_w, warn_kept),
+           "(a) warn where 0.05 <= p < 0.10": (kept_w, warn_band),
+           "(b1) taper 2 %*0.05/(p-0.05)": (partial(_limit_cap, limit_of_p=taper_hyperbolic),
+                                            warn_band),
+           "(b2) taper 2 %*ln2/ln(p/0.05)": (partial(_limit_cap, limit_of_p=taper_log), warn_band),
+           "(b3) share linear in p": (_taper_share, warn_band),
+           "(c) Bayes-factor floor, p < 0.10": (partial(_limit_cap, limit_of_p=taper_bayes),
+                                                warn_band),
+           "hard cap 2 % where p >= 0.05": (partial(_cap, bound=DRAW_HARM_LIMIT, p0=P_WEAK),
+                                            warn_band),
+           "no cap (session 22)": (base_w, warn_kept)}
+    return out
+
+
+def score_band(recs, rules, evidence=False):
+    """Per rule: no-shift cells above 1.02 (of them without any warning), worst, the warnings
+    the rule adds on no-shift and on shifted cells, and the shifted cells' gap closed."""
+    out = {}
+    for name, (wrule, wwarn) in rules.items():
+        no_r, no_unw, no_new, sh_new, sh_gap, sh_g, sh_t = [], [], 0, 0, [], 0.0, 0.0
+        capped_sh = 0
+        for d in recs:
+            w = wrule(d)
+            warned_rule = wwarn(d, w)
+            new = warned_rule and not warn_kept(d, w)
+            if evidence:
+                no_shift, ll0 = d["cell"][2] == 1.0, ll_at(d, 0.0)
+                llo, other = ll_prior(d, d["target"]), False
+            else:
+                row = d["row"]
+                no_shift = row["kind"] in ("x1", "none")
+                ll0, llo = row["ll_none"], row["ll_oracle"]
+                other = bool(set(str(row["warn"]).split(",")) - {"", "nan",
+                                                                   "NoShiftHarmWarning"})
+            lla = ll_at(d, w)
+            if no_shift:
+                no_r.append(lla / ll0)
+                no_unw.append(not (other or warned_rule))
+                no_new += new
+            else:
+                sh_new += new
+                capped_sh += w < kept_w(d) - 1e-12
+                if ll0 - llo > 0.002:
+                    sh_gap.append((ll0 - lla) / (ll0 - llo))
+                    sh_g += ll0 - lla
+                    sh_t += ll0 - llo
+        no_r, no_unw = np.array(no_r), np.array(no_unw)
+        out[name] = dict(worst=no_r.max(), above=int((no_r > 1.02).sum()),
+                         above_unw=int(((no_r > 1.02) & no_unw).sum()), n_no=len(no_r),
+                         mean_no=float(no_r.mean()), closed=float(np.mean(sh_gap)),
+                         pooled=sh_g / sh_t, n_sh=len(sh_gap), new_no=no_new, new_sh=sh_new,
+                         n_shifted=len(recs) - len(no_r), capped_sh=capped_sh)
+    return out
+
+
+def score_band_evidence(recs, rules):
+    """shift.py --quick --only=evidence: per cell means, as the benchmark prints them."""
+    res = score_evidence(recs, {k: v[0] for k, v in rules.items()})
+    for name, (wrule, wwarn) in rules.items():
+        new_no = new_sh = 0
+        for d in recs:
+            w = wrule(d)
+            new = wwarn(d, w) and not warn_kept(d, w)
+            if d["cell"][2] == 1.0:
+                new_no += new
+            else:
+                new_sh += new
+        res[name].update(new_no=new_no, new_sh=new_sh)
+    return res
+
+
 def warned_harm(d, w):
     p = d["pvalue"]
     return bool(w > 0 and np.isfinite(p) and p >= 0.10 and harm(d, w) > DRAW_HARM_LIMIT)
@@ -352,12 +567,36 @@ def main() -> None:
             src = ((nm, pd.DataFrame(X), np.asarray(y).astype(str), models, False)
                    for nm, X, y in sets(n_tasks))
             res, fn = hunt(1, src), f"hunt_{mode}_{n_tasks}.pkl"
+        elif mode in ("hunt24", "hunt25"):
+            names = args[2].split(",") if len(args) > 2 and args[2] != "all" else None
+            seeds = int(args[3]) if len(args) > 3 else 2
+            tag = args[4] if len(args) > 4 else "all"
+            fn = f"hunt_{mode}_{tag}.pkl"
+            res = hunt24(f"shift_real_{mode}", seeds, names, save=out_dir / fn)
         else:
             res = draws(args[2], args[3], int(args[4]))
             fn = f"draws_{args[2]}_{args[3]}.pkl"
         with open(out_dir / fn, "wb") as f:
             pickle.dump(res, f)
         print("saved", out_dir / fn, len(res), f"{time.time() - t0:.0f} s")
+        return
+    if args[0] == "band":  # the session-26 comparison (docs/prior_shift.md)
+        for fn in args[1:]:
+            with open(fn, "rb") as f:
+                recs = pickle.load(f)
+            print("==", fn, len(recs), "adapts")
+            if Path(fn).name.startswith("evidence"):
+                for k, v in score_band_evidence(recs, band_rules()).items():
+                    print(f"{k:36s} closed {v['closed']:6.1%} pooled {v['pooled']:6.1%} worst "
+                          f"no-shift {v['worst']:.4f} | new warnings: no-shift {v['new_no']}, "
+                          f"shifted {v['new_sh']}")
+            else:
+                for k, v in score_band(recs, band_rules()).items():
+                    print(f"{k:36s} no-shift worst {v['worst']:.4f} >1.02 {v['above']:2d} "
+                          f"(quiet {v['above_unw']}) of {v['n_no']} mean {v['mean_no']:.4f} | "
+                          f"shifted closed {v['closed']:6.1%} pooled {v['pooled']:6.1%} "
+                          f"({v['n_sh']}) | new warnings: no-shift {v['new_no']}, shifted "
+                          f"{v['new_sh']} of {v['n_shifted']}; moved less {v['capped_sh']}")
         return
     fn = args[1]
     rules = make_rules()
