@@ -16,7 +16,7 @@ loss to 1e-15). Rules are written against the share *before* the session-23 cap
     PYTHONPATH=$PWD nice python benchmarks/shift_draw_caps.py capture hunt25 SET,SET|all SEEDS TAG
     PYTHONPATH=$PWD nice python benchmarks/shift_draw_caps.py capture hunt24 SET,SET|all SEEDS TAG
     PYTHONPATH=$PWD python benchmarks/shift_draw_caps.py score FILE.pkl [RULE ...]
-    PYTHONPATH=$PWD python benchmarks/shift_draw_caps.py band FILE.pkl [FILE.pkl ...]
+    PYTHONPATH=$PWD python benchmarks/shift_draw_caps.py band FILE.pkl[+FILE.pkl] [...]
 
 ``hunt24`` / ``hunt25`` use the cells of ``benchmarks/shift_real_hunt24.py`` /
 ``shift_real_hunt25.py`` (the named sets in that order; the file is rewritten after every set).
@@ -397,6 +397,14 @@ def warn_band(d, w):
     return warn_kept(d, w) or (in_band(d) and w0 > 0 and harm(d, w0) > DRAW_HARM_LIMIT)
 
 
+def warn_from(d, w, p0):
+    """The kept warning, and also where ``p0 <= p < 0.10`` and the share before any cap would
+    raise a no-shift draw's log loss by more than 2 % (``p0 = 0.05``: :func:`warn_band`)."""
+    p, w0 = d["pvalue"], base_w(d)
+    return warn_kept(d, w) or bool(np.isfinite(p) and p0 <= p < P_CAP and w0 > 0
+                                   and harm(d, w0) > DRAW_HARM_LIMIT)
+
+
 def warn_band_applied(d, w):
     """As :func:`warn_band`, on the share applied (after the rule's own cap)."""
     return warn_kept(d, w) or (in_band(d) and w > 0 and harm(d, w) > DRAW_HARM_LIMIT)
@@ -408,6 +416,7 @@ def band_rules():
 
     out = {"kept (cap 2 % where p >= 0.10)": (kept_w, warn_kept),
            "(a) warn where 0.05 <= p < 0.10": (kept_w, warn_band),
+           "(a') warn where 0.01 <= p < 0.10": (kept_w, partial(warn_from, p0=0.01)),
            "(b1) taper 2 %*0.05/(p-0.05)": (partial(_limit_cap, limit_of_p=taper_hyperbolic),
                                             warn_band),
            "(b2) taper 2 %*ln2/ln(p/0.05)": (partial(_limit_cap, limit_of_p=taper_log), warn_band),
@@ -581,9 +590,11 @@ def main() -> None:
         print("saved", out_dir / fn, len(res), f"{time.time() - t0:.0f} s")
         return
     if args[0] == "band":  # the session-26 comparison (docs/prior_shift.md)
-        for fn in args[1:]:
-            with open(fn, "rb") as f:
-                recs = pickle.load(f)
+        for fn in args[1:]:  # FILE+FILE pools the files' cells
+            recs = []
+            for part in fn.split("+"):
+                with open(part, "rb") as f:
+                    recs += pickle.load(f)
             print("==", fn, len(recs), "adapts")
             if Path(fn).name.startswith("evidence"):
                 for k, v in score_band_evidence(recs, band_rules()).items():
