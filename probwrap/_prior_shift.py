@@ -630,6 +630,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             if sample_weight is not None and kept is not None:
                 # a small set, fitted in memory on its collected rows: the same warning
                 self._warn_weight_reading(kept[2])
+            self.output_map_ = None
+            if kept is not None and est.calibrator_ is not None:
+                # a small set's collected rows: the output map the in-memory fit chooses
+                self._choose_output_map(est, sample_weight)
             self._source_tally = None
             return self._finish_fit(est)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
@@ -709,24 +713,39 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         return (*counts, *(getattr(self, "_labelled_clumps", None) or ()))
 
     def _choose_output_map(self, est: PriorEstimator, sample_weight: Any) -> None:
-        """On at most 100 labelled rows of two classes, where the model gives probabilities
-        nearer 0 or 1 than the square of the row bound ``1 / (4 (N + 1))`` and the labels
-        contradict that confidence — a row given less than the bound (but not exactly 0) for
-        its own class —
-        ``predict_proba`` returns the probabilities of ``CalibrationWrapper(method="auto")``
+        """On at most 100 labelled rows of more than two classes, or of two classes where
+        the model gives probabilities nearer 0 or 1 than the square of the row bound
+        ``1 / (4 (N + 1))`` and either the labels contradict that confidence — a row given
+        less than the bound (but not exactly 0) for its own class — or most rows are at
+        exactly 0 or 1 (saturated), ``predict_proba`` returns the probabilities of ``CalibrationWrapper(method="auto")``
         over the smooth maps, on folds fixed by the rows, fitted on the same held-out
         probabilities (``output_map_``;
         :mod:`probwrap._prior_shift_output_map`). The map is fixed here, so ``adapt`` re-weights the
         same probabilities and ``target_prior=source_prior_`` returns them unchanged; the prior
         estimate keeps ``calibrator_``'s map. Dask and Spark sets of at most 20,000 rows come
-        here with their rows (``from_tally`` is False), so they choose the same map. Measured in
-        docs/prior_shift.md, "Before adapt on small labelled sets"."""
-        from ._prior_shift_output_map import contradicted_confidence, fit_output_map
+        here with their rows (``from_tally`` is False), so they choose the same map (and
+        multiclass Dask or Spark sets small enough to be fitted on their collected rows).
+        Where none of this holds but the likelihood-ratio test kept a coarse grid of
+        probabilities (a forest's) that the map sharpens by a scale of 1.3 or more, the map
+        predicts instead (``calibrator_.identity_kept_`` set False). Measured in
+        docs/prior_shift.md, "Before adapt on small labelled sets" and "Before adapt: the
+        session-26 changes"."""
+        from ._prior_shift_output_map import (
+            contradicted_confidence,
+            fit_output_map,
+            under_confident_grid,
+        )
 
         cal = est.calibrator_
         p, y_idx, w = est._src
         reason = contradicted_confidence(p, y_idx, w)
         if reason is None:
+            if getattr(cal, "identity_kept_", False) and under_confident_grid(
+                    p, w, float(np.ravel(cal.scale_)[0])):
+                # a coarse grid (a forest's votes) that the map sharpens well beyond its
+                # prior: the map predicts, not the floored grid (identity_pvalue_ is still
+                # reported); as for a model refit here
+                cal.identity_kept_ = False
             return
         self.output_map_ = fit_output_map(p, y_idx, None if sample_weight is None else w,
                                           self.random_state, "PriorShiftWrapper.fit")

@@ -134,14 +134,31 @@ def test_rule_reads_the_row_bound_and_the_models_resolution():
     p_grid = np.column_stack([1 - grid, grid])
     p_grid[0] = [0.0, 1.0]
     assert contradicted_confidence(p_grid, y, w) is None
-    # more than 100 rows, or three classes: never
+    # more than 100 rows: never
     big = np.tile(p_miss, (6, 1))
     assert contradicted_confidence(big, np.tile(y, 6), np.ones(120)) is None
     hundred = np.tile(p, (5, 1))
     hundred[0] = [0.0005, 0.9995]  # below 1 / (4 * 101) = 0.0025 for its own class 0
     assert contradicted_confidence(hundred, np.tile(y, 5), np.ones(100)) == "confident miss"
-    three = np.column_stack([p_miss * 0.9, np.full(20, 0.1)])
-    assert contradicted_confidence(three, y, w) is None
+    # three classes: always on at most 100 rows (since the twenty-sixth session), never beyond
+    three = np.column_stack([p * 0.9, np.full(20, 0.1)])
+    assert contradicted_confidence(three, y, w) == "more classes"
+    assert contradicted_confidence(np.tile(three, (6, 1)), np.tile(y, 6), np.ones(120)) is None
+    # most rows at exactly 0 or 1 (underflowed naive Bayes) with one resolved beyond b ** 2:
+    # saturated, whether or not a row's own class got 0
+    flat = np.column_stack([1.0 - y, y.astype(float)])
+    flat[0] = [1e-9, 1.0 - 1e-9]  # row 0 is of class 0: a confident miss
+    assert contradicted_confidence(flat, y, w) == "confident miss"
+    flat[0] = [1.0 - 1e-9, 1e-9]
+    assert contradicted_confidence(flat, y, w) == "saturated"
+    flat[2] = [0.0, 1.0]  # row 2 (class 0) at exactly 0 for its own class
+    assert contradicted_confidence(flat, y, w) == "saturated"
+    half = flat.copy()
+    half[:11] = [[0.3, 0.7]]  # 9 of 20 rows at exactly 0 or 1: not saturated
+    half[11] = [1e-9, 1.0 - 1e-9]
+    assert contradicted_confidence(half, y, w) is None
+    half[:11] = [[0.0, 1.0]]
+    assert contradicted_confidence(half, y, w) == "saturated"
 
 
 def test_untouched_beyond_100_rows():
