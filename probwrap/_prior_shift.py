@@ -161,6 +161,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     ``calibration=None``; of the refit model, or averaged over the fold models, see
     ``predict_with``; on at most 100 labelled rows of two classes where a row got a probability
     for its own class below what the rows can resolve, from a model resolving far beyond it,
+    or where most of them got exactly 0 or 1, and on at most 100 rows of more classes,
     the map ``CalibrationWrapper(method="auto")`` chooses among the smooth maps on the same
     held-out probabilities and fixed folds, ``output_map_``), re-weighted to the prior in use,
     ``applied_prior_``: ``target_prior`` when it is given; otherwise, after ``adapt``, the
@@ -331,13 +332,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         a forest's grid of multiples of ``1 / n_trees`` does not reach it, nor, on the
         benchmarks, a logistic regression or boosting that passes ``b``), and a labelled row
         got less than ``b``, but
-        not exactly 0, for its own class (its confidence contradicted):
+        not exactly 0, for its own class (its confidence contradicted), or at least half of
+        them (by weight) got exactly 0 or 1 (saturated); or where ``fit`` had at most 100
+        labelled rows of more than two classes (always):
         ``CalibrationWrapper(method="auto")`` choosing among temperature, Platt and beta
         scaling on folds fixed by the rows (the same on Dask and Spark, drawn at no
         ``random_state``), fitted on the held-out probabilities, whose output
         ``predict_proba`` returns (re-weighted to ``applied_prior_`` after ``adapt``; the prior
         estimate still reads ``calibrator_``). None otherwise. Measured in
-        docs/prior_shift.md, "Before adapt on small labelled sets".
+        docs/prior_shift.md, "Before adapt on small labelled sets" and "Before adapt: the
+        session-26 changes".
     known_prior_ : ndarray of shape (n_classes,) or None
         ``target_prior`` validated and put in ``classes_`` order (None when not given).
     prior_estimator_ : probwrap.shift.PriorEstimator
