@@ -156,7 +156,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
     ``predict_proba`` always returns the calibrated posteriors (``calibrator_``: for a
     frozen estimator its own probabilities where the calibration's likelihood-ratio test keeps
-    them, for an estimator cross-fitted here always the fitted map, as the test judged the fold
+    them — except, on at most 100 rows, a coarse grid of them (a forest's votes) that the map
+    sharpens by a scale of 1.3 or more —, for an estimator cross-fitted here always the fitted map, as the test judged the fold
     models and not the refit one; the estimator's own probabilities with
     ``calibration=None``; of the refit model, or averaged over the fold models, see
     ``predict_with``; on at most 100 labelled rows of two classes where a row got a probability
