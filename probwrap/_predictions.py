@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from ._validation import plain, row_sum
+from ._validation import counted_rows, plain, row_sum
 
 __all__ = ["HeldOutPredictions", "check_model_probabilities", "resolve_response",
            "rows_summing_to_one", "ROUNDING_SUM_LIMIT"]
@@ -75,8 +75,6 @@ class HeldOutPredictions:
         rows repeated would, since session 26); for tally rows the original rows' counts."""
         if self.from_tally and self.weighted_class_rows is not None:
             return np.asarray(self.weighted_class_rows, dtype=np.int64)
-        from ._weights import counted_rows  # (a count table's rows count their cases)
-
         return np.bincount(np.asarray(self.y_index, dtype=np.intp), weights=counted_rows(w),
                            minlength=len(self.classes)).astype(np.int64)
 

@@ -28,6 +28,10 @@ __all__ = [
     "row_sum",
     "row_max",
     "shared_factor",
+    "COUNT_TABLE_MAX_CASES",
+    "whole_counts",
+    "counted_rows",
+    "case_rows",
 ]
 
 
@@ -453,3 +457,72 @@ def shared_factor(w: np.ndarray) -> int | None:
     if float(positive.max()) >= 2.0**53:
         return None
     return int(np.gcd.reduce(positive.astype(np.int64)))
+
+
+#: Whole-number weights are read as counts of cases by the steps that count rows (``auto``'s
+#: choice, the tuned cutoff's anchor, the exact cutoff range) while their total is at most this
+#: many cases: the choice then scores the cases one by one, as it scores the rows repeated
+#: (``np.repeat``). Above it (more cases than a choice needs: ``auto`` scores at most 20,000
+#: rows) the weights keep the relative reading (Kish's size) there.
+COUNT_TABLE_MAX_CASES = 1_000_000
+
+
+def whole_counts(w: np.ndarray) -> np.ndarray | None:
+    """``w`` as whole-number counts of cases (int64), or None when they are not a count table.
+
+    A count table's weights are whole numbers, some of them above 1 (one row per distinct
+    cell, weighted by how many cases it stands for), with no common factor above 1 and a total
+    of at most :data:`COUNT_TABLE_MAX_CASES`. Weights that are all 0 or 1, any weight that is
+    not a whole number (normalised, survey or importance weights), and whole numbers that all
+    share a factor above 1 (equal weights of 1,000, or counts multiplied by a constant: more
+    often a scaled weight than a count, and the factor must not move a choice; they draw the
+    :class:`~probwrap.calibration.WeightScaleWarning` of :func:`warn_count_reading` where
+    their scale moves a result) give None: those keep their reading (rows, or Kish's
+    effective size).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> whole_counts(np.array([3.0, 0.0, 2.0])).tolist(), whole_counts(np.array([1.5, 2.0]))
+    ([3, 0, 2], None)
+    >>> whole_counts(np.array([3000.0, 2000.0])) is None  # every weight a multiple of 1,000
+    True
+    """
+    w = np.asarray(w, dtype=float)
+    if not w.size or shared_factor(w) != 1 or not float(w.max()) > 1.0:
+        return None
+    if np.any(w < 0) or float(w.sum()) > COUNT_TABLE_MAX_CASES:
+        return None
+    return np.round(w).astype(np.int64)
+
+
+def counted_rows(w: np.ndarray) -> np.ndarray:
+    """How many rows each row counts for where a step counts rows: its whole-number count in a
+    count table (:func:`whole_counts`), otherwise 1 for a row of positive weight, 0 for none.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> counted_rows(np.array([3.0, 0.0, 2.0])).tolist(), counted_rows(np.array([0.5, 0.0])).tolist()
+    ([3, 0, 2], [1, 0])
+    """
+    counts = whole_counts(w)
+    if counts is not None:
+        return counts
+    return (np.asarray(w, dtype=float) > 0).astype(np.int64)
+
+
+def case_rows(w: np.ndarray) -> np.ndarray | None:
+    """Index of every case of a count table (:func:`whole_counts`): each row repeated by its
+    count, as ``np.repeat(np.arange(len(w)), w)``; None when ``w`` is not a count table.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> case_rows(np.array([2.0, 0.0, 3.0])).tolist()
+    [0, 0, 2, 2, 2]
+    """
+    counts = whole_counts(w)
+    if counts is None:
+        return None
+    return np.repeat(np.arange(counts.shape[0]), counts)

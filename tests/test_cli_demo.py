@@ -202,7 +202,7 @@ def _write(tmp_path, name, text):
         ("risk,damaged\n0.1,0\n0.2,2\n0.3,1\n", ["column 'damaged'", "exactly two labels",
                                                  "holds 3: 0, 2, 1"]),
         ("risk,damaged\n0.1,0\n0.2,0\n", ["column 'damaged'", "exactly two labels",
-                                          "holds 1: 0"]),
+                                          "one label only, 0"]),
         ("risk,damaged\n0.1,0\n1.7,1\n", ["column 'risk', row 3", "not a probability"]),
     ],
 )
