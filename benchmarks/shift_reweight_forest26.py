@@ -33,7 +33,9 @@ it in 8 of 48 moved cells, although the interval covered the true share every ti
 
 Run:
     python benchmarks/shift_reweight_forest26.py mechanism frozen 500 2 10
-    python benchmarks/shift_reweight_forest26.py mechanism refit 150 0 1 "breast cancer" lr x0.5
+    python benchmarks/shift_reweight_forest26.py mechanism refit 150 0 1 "breast cancer" lr x0.5,x2
+    python benchmarks/shift_reweight_forest26.py mechanism frozen 150 0 10 "breast cancer" lr x0.5
+    python benchmarks/shift_reweight_forest26.py rule "breast cancer" rf,lr 2,3,4,5,6,7,8,9 /tmp/bc.csv
     python benchmarks/shift_reweight_forest26.py rule "Saratoga|breast cancer|Default" rf,lr 0,1 /tmp/r1.csv
     python benchmarks/shift_reweight_forest26.py rule "wage1|Galton|fertil1|CPS1988|mgus|apple" rf,lr 0 /tmp/r2.csv
     python benchmarks/shift_reweight_forest26.py score /tmp/r1.csv /tmp/r2.csv
