@@ -747,7 +747,7 @@ class _AutoChoice:
                         and (_PASS_OVER_TEMPERATURE_OFF_BASE_RATE or (
                             "platt" in eligible and scores_out["platt"][0] < loss
                             and scores_out["platt"][0] - means[best] <= scores_out["platt"][1]))
-                        and self._temperature_off_base_rate(scores, y, w, notes, best, means)):
+                        and self._temperature_off_shares(scores, y, w, notes, best, means)):
                     continue  # to the next map in order: Platt scaling when within an error
                 return name, scores_out, notes
         if decreasing_passed:
@@ -764,48 +764,17 @@ class _AutoChoice:
         notes.setdefault(fallback, "chosen as the fallback: no candidate was eligible")
         return fallback, scores_out, notes
 
-    def _temperature_off_base_rate(self, scores, y, w, notes, best, means) -> bool:
-        """True (and noted) when temperature scaling, fitted on all held-out rows, leaves their
-        mean probability off their base rate by more than ``_BASE_RATE_SE`` standard errors
-        (binary ``scores``, class indices ``y``, weights ``w``; ``best`` the map with the lowest
-        cross-validated log loss ``means[best]``). The standard error is computed on weights
-        normalised to sum one, so scaling all weights does not change the answer."""
-        if not np.isfinite(_BASE_RATE_SE):
-            return False
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            try:
-                cal = self._fit_map(TemperatureMap(), scores, y, w)
-            except (ValueError, FloatingPointError, np.linalg.LinAlgError):
-                return False
-            q = self._apply_map(cal, scores)[:, 1]
-        wn = w / w.sum()
-        t = (y == 1).astype(float)
-        gap = float(wn @ (t - q))
-        se = float(np.sqrt(wn**2 @ (q * (1 - q))))
-        if not se > 0 or abs(gap) <= _BASE_RATE_SE * se:
-            return False
-        text = (
-            f"passed over by the one-standard-error rule for the next map in order "
-            f"({plain(best)!r} scored lower on the folds: {means[best]:.4g} against "
-            f"{means['temperature']:.4g}): fitted on all "
-            f"held-out rows (temperature {float(cal.temperature_):.3g}, no intercept) the mean "
-            f"probability of class {plain(self.classes_[1])!r} is {float(wn @ q):.3g} against "
-            f"the base rate {float(wn @ t):.3g}, {abs(gap) / se:.2f} standard errors off"
-        )
-        notes["temperature"] = text if "temperature" not in notes else (
-            notes["temperature"] + "; " + text)
-        return True
-
     def _temperature_off_shares(self, scores, y, w, notes, best, means) -> bool:
-        """More than two classes: True (and noted) when temperature scaling, fitted on all
-        held-out rows, leaves the classes' mean probabilities off their shares by more than
-        ``_BASE_RATE_SE`` standard errors in mean square over the classes (see
-        ``_PASS_OVER_TEMPERATURE_OFF_SHARES_MULTICLASS``). ``scores`` are the held-out
-        probabilities (rows by classes), ``y`` the class indices, ``w`` the weights; the
-        standard errors use weights normalised to sum one, so the scale of the weights does not
-        change the answer."""
-        if not np.isfinite(_BASE_RATE_SE) or scores.ndim != 2:
+        """True (and noted) when temperature scaling, fitted on all held-out rows, leaves the
+        classes' mean probabilities off their shares: with two classes (binary ``scores``) the
+        mean probability of the second class off its base rate by more than ``_BASE_RATE_SE``
+        standard errors (see ``_PASS_OVER_TEMPERATURE_OFF_BASE_RATE``); with more (``scores``
+        rows by classes) by more than ``_BASE_RATE_SE`` standard errors in mean square over the
+        classes (see ``_PASS_OVER_TEMPERATURE_OFF_SHARES_MULTICLASS``). ``y`` are the class
+        indices, ``w`` the weights, ``best`` the map with the lowest cross-validated log loss
+        ``means[best]``. The standard errors use weights normalised to sum one, so the scale of
+        the weights does not change the answer."""
+        if not np.isfinite(_BASE_RATE_SE):
             return False
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -816,24 +785,36 @@ class _AutoChoice:
             q = self._apply_map(cal, scores)
         wn = w / w.sum()
         t = np.zeros_like(q)
-        t[np.arange(y.shape[0]), y] = 1.0
+        t[np.arange(y.shape[0]), np.asarray(y, dtype=np.intp)] = 1.0
         gap = wn @ (t - q)
         se = np.sqrt((wn**2) @ (q * (1.0 - q)))
-        if not np.all(se > 0):
-            return False
-        z2 = float(np.mean((gap / se) ** 2))
-        if z2 <= _BASE_RATE_SE**2:
-            return False
-        k = int(np.argmax(np.abs(gap) / se))
-        text = (
+        lead = (
             f"passed over by the one-standard-error rule for the next map in order "
             f"({plain(best)!r} scored lower on the folds: {means[best]:.4g} against "
             f"{means['temperature']:.4g}): fitted on all held-out rows (temperature "
-            f"{float(cal.temperature_):.3g}, no per-class intercept) the classes' mean "
-            f"probabilities are off their shares by {np.sqrt(z2):.2f} standard errors in mean "
-            f"square (class {plain(self.classes_[k])!r}: {float(wn @ q[:, k]):.3g} against "
-            f"{float(wn @ t[:, k]):.3g})"
+            f"{float(cal.temperature_):.3g}, "
         )
+        if scores.ndim == 1:
+            if not se[1] > 0 or abs(gap[1]) <= _BASE_RATE_SE * se[1]:
+                return False
+            text = lead + (
+                f"no intercept) the mean probability of class {plain(self.classes_[1])!r} is "
+                f"{float(wn @ q[:, 1]):.3g} against the base rate {float(wn @ t[:, 1]):.3g}, "
+                f"{abs(gap[1]) / se[1]:.2f} standard errors off"
+            )
+        else:
+            if not np.all(se > 0):
+                return False
+            z2 = float(np.mean((gap / se) ** 2))
+            if z2 <= _BASE_RATE_SE**2:
+                return False
+            k = int(np.argmax(np.abs(gap) / se))
+            text = lead + (
+                f"no per-class intercept) the classes' mean probabilities are off their shares "
+                f"by {np.sqrt(z2):.2f} standard errors in mean square (class "
+                f"{plain(self.classes_[k])!r}: {float(wn @ q[:, k]):.3g} against "
+                f"{float(wn @ t[:, k]):.3g})"
+            )
         notes["temperature"] = text if "temperature" not in notes else (
             notes["temperature"] + "; " + text)
         return True
