@@ -48,6 +48,7 @@ import numpy as np
 from scipy.stats import norm
 
 from ._estimate import em_prior
+from ._mixture_fit import _kish
 
 __all__ = ["FeatureMixtureMisfit", "FeatureMixtureMisfitWarning", "feature_mixture_misfit",
            "FEATURE_MISFIT_LEVEL"]
@@ -105,11 +106,6 @@ class FeatureMixtureMisfit:
     classes: np.ndarray
     effective_rows: tuple[float, float]
     folds: int
-
-
-def _kish(w: np.ndarray) -> float:
-    total = float(w.sum())
-    return total * total / float(np.dot(w, w)) if total > 0 else 0.0
 
 
 def _check_matrix(X: Any, name: str) -> np.ndarray:
