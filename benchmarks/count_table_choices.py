@@ -96,6 +96,8 @@ def run(name, n_fit, n_cal, seed, out):
     X, y = load(name)
     idx = np.random.default_rng(seed).permutation(len(y))
     fit, cal, te = idx[:n_fit], idx[n_fit:n_fit + n_cal], idx[n_fit + n_cal:]
+    if te.shape[0] < 100:  # (Putts1 with 300 labelled cases: no test cases left)
+        return
     Xt, yt, wt = table(X[cal], y[cal])
     Xr, yr = np.repeat(Xt, wt.astype(int), axis=0), np.repeat(yt, wt.astype(int))
     models = {"lr": LogisticRegression(max_iter=1000), "nb": GaussianNB(),

@@ -383,6 +383,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
     #: the fold models are kept through ``fit`` (read by ``_heldout._cross_fit``): the refit
     #: check compares them with the refitted model; they stay only when they predict
     _keep_fold_models = True
+    _split_table_cases = True  # a count table's cases split into folds (session 27)
 
     # -- fitting ---------------------------------------------------------------------------
     def fit(self, X: Any, y: Any, sample_weight: Any = None, **fit_params: Any) -> CalibrationWrapper:
@@ -512,11 +513,13 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
                 or self.predict_with == "fold_models"):
             return None
         values = np.asarray(self.estimator_.predict_proba(X), dtype=float)
-        if values.ndim != 2 or values.shape[0] != ho.y_index.shape[0]:
+        # (a count table cross-fitted by its cases: the held-out rows are pieces of X's rows)
+        w = getattr(ho, "row_weight", None)
+        w = ho.sample_weight if w is None else w
+        if values.ndim != 2 or values.shape[0] != np.shape(w)[0]:
             return None
         lp = np.log(np.maximum(values[:, -2:], _TINY))
         s = lp[:, 1] - lp[:, 0]
-        w = ho.sample_weight
         if w is not None and np.shape(w) == s.shape:
             s = s[np.asarray(w) > 0]
         s = s[np.isfinite(s)]
@@ -634,16 +637,29 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             return
         response = self.response_
         n = ho.y_index.shape[0]
+        # a count table cross-fitted by its cases (session 27): X's rows, each as many times
+        # as its count, as the spread of the rows repeated
+        table = getattr(ho, "table_row", None) is not None
+        if table:
+            counts = np.round(np.asarray(ho.row_weight, dtype=float))
+            n = counts.shape[0]
         if n > _SPREAD_CHECK_MAX_ROWS:  # evenly spaced rows: the check's cost stays bounded
-            X = _safe_indexing(indexable(X)[0],
-                               np.linspace(0, n - 1, _SPREAD_CHECK_MAX_ROWS).astype(np.intp))
+            picked = np.linspace(0, n - 1, _SPREAD_CHECK_MAX_ROWS).astype(np.intp)
+            X = _safe_indexing(indexable(X)[0], picked)
+            if table:
+                counts = counts[picked]
         spreads = []
         complete = True
         for model, fold_classes in [(self.estimator_, self.classes_), *models]:
             out = np.asarray(getattr(model, response)(X), dtype=float)
             complete &= fold_classes.shape[0] == self.classes_.shape[0]
             s = self._check_scores(fold_columns(fold_classes, out, self.classes_, response))
-            sd = float(np.sqrt(np.mean(s.var(axis=0))))
+            if table:
+                mean = np.average(s, axis=0, weights=counts)
+                sd = float(np.sqrt(np.mean(np.average((s - mean) ** 2, axis=0,
+                                                      weights=counts))))
+            else:
+                sd = float(np.sqrt(np.mean(s.var(axis=0))))
             # a model that scores every row alike (up to rounding) has no spread
             spreads.append(sd if sd > 1e-9 * max(1.0, float(np.abs(s).max())) else 0.0)
         ratios, unstable = spread_check(spreads)

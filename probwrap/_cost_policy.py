@@ -247,6 +247,12 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         self.tally_resolution = tally_resolution
         self.keep_heldout = keep_heldout
 
+    @property
+    def _split_table_cases(self) -> bool:
+        """A count table's cases are split into folds when the model is cross-fitted
+        (session 27), except with per-row costs, which are read for the rows of ``X``."""
+        return not callable(self.costs)
+
     # -- parameter checks ------------------------------------------------------------------
     def _check_params(self) -> None:
         if not isinstance(self.keep_heldout, (bool, np.bool_)):

@@ -707,6 +707,11 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             est_params, split_params = self._route_fit_params(
                 sw if sample_weight is not None else None, fit_params
             )
+            table = self._table_case_folds(X, y_arr, y_index, classes, sw, est_params,
+                                           split_params)
+            if table is not None:
+                return self._fit_heldout_table(X, y_arr, y_index, classes, sw, est_params,
+                                               response, *table)
             splitter = self._make_splitter(y_arr)
             with warnings.catch_warnings():
                 # Tiny classes trigger a warning from StratifiedKFold; they are handled below.
@@ -804,6 +809,151 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             case_cells=(feature_cells(X, None, np.asarray(y_index))
                         if sw is not None and whole_counts(sw) is not None else None),
         )
+
+    #: Whether a count table's cells are split into case-level folds when the model is
+    #: cross-fitted (``cv`` a number): each row's count is shared among the folds as the same
+    #: splitter shares the rows repeated by their counts (``np.repeat``), each fold model is
+    #: fitted on the table with the counts left in its training part, and the held-out rows are
+    #: (row, fold) pieces weighted by the cases held out there (session 27,
+    #: docs/aggregated_outcomes.md, "Cross-fitting a count table by its cases"). Wrappers whose
+    #: later steps need one held-out row per row of ``X`` set it to False.
+    _split_table_cases = False
+
+    def _table_case_folds(
+        self, X: Any, y: np.ndarray, y_index: np.ndarray, classes: np.ndarray,
+        sw: np.ndarray | None, est_params: dict, split_params: dict,
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None] | None:
+        """For a count table cross-fitted on ``cv`` folds: ``(counts, fold, copies)``, with
+        ``fold`` the fold of every case (the rows repeated by their counts, in order) and
+        ``copies`` the cells the repeated rows would keep together (:func:`feature_cells`
+        without weights), else None (the table's rows are the units of the folds, as before
+        session 27).
+
+        The cases are split by the wrapper's own splitter (stratified, shuffled with
+        ``random_state``) run on the labels of the rows repeated in order, so a table and
+        ``np.repeat`` of its rows get the same folds of cases. Not used when the model takes
+        no ``sample_weight`` (its fold models could not see the counts), with other fit
+        parameters or splitter groups, with folds given as ``cv``, or where the wrapper says
+        so (:attr:`_split_table_cases`).
+        """
+        if sw is None or not self._split_table_cases or split_params:
+            return None
+        if set(est_params) != {"sample_weight"} or get_config().get("enable_metadata_routing"):
+            return None
+        cv = self.cv if self.cv is not None else 5
+        if not isinstance(cv, numbers.Integral) or isinstance(cv, bool):
+            return None
+        counts = whole_counts(sw)
+        if counts is None:
+            return None
+        cases = np.repeat(np.arange(counts.shape[0]), counts)
+        y_cases = y[cases]
+        splitter = self._make_splitter(y_cases)
+        with warnings.catch_warnings():
+            warnings.filterwarnings("ignore", message="The least populated class")
+            try:
+                splits = list(splitter.split(np.zeros((cases.shape[0], 1)), y_cases))
+            except ValueError as exc:
+                raise ValueError(self._too_many_folds(y_index[cases], classes, exc)) from exc
+        fold = np.empty(cases.shape[0], dtype=np.intp)
+        for i, (_, test) in enumerate(splits):
+            fold[test] = i
+        copies = feature_cells(X, None, y_index)
+        if copies is not None:
+            # the repeated rows' copies of a row (a value found in no other row, as star98's
+            # district measurements) stay in one fold, as they would for the rows repeated
+            # (unless that leaves a training part without a class, as the rows' folds do)
+            kept = keep_cells_together(fold, copies[cases])
+            if int(kept.max()) + 1 >= 2 and all(
+                    np.unique(y_cases[kept != i]).shape[0] == classes.shape[0]
+                    for i in range(int(kept.max()) + 1)):
+                fold = kept
+        return counts, fold, copies
+
+    def _fit_heldout_table(
+        self, X: Any, y: np.ndarray, y_index: np.ndarray, classes: np.ndarray, sw: np.ndarray,
+        est_params: dict, response: str, counts: np.ndarray, case_fold: np.ndarray,
+        copies: np.ndarray | None,
+    ) -> HeldOutPredictions:
+        """Held-out predictions of a count table cross-fitted by its cases
+        (:meth:`_table_case_folds`): fold ``f``'s model is fitted on the rows with the cases
+        left in its training part as their weights and scores the rows it holds cases of.
+        The held-out rows are the runs of the cases (the rows repeated, in order) that share a
+        row and a fold, each weighted by its length: repeated by their weights they are the
+        repeated rows' held-out cases in the same order, so the steps that draw folds of cases
+        from them (``auto``'s choice on a frozen score, the tuned cutoff's anchor) draw the
+        same ones."""
+        cases = np.repeat(np.arange(counts.shape[0]), counts)
+        n_folds = int(case_fold.max()) + 1
+        held = np.zeros((counts.shape[0], n_folds), dtype=np.int64)
+        np.add.at(held, (cases, case_fold), 1)
+        n_classes = classes.shape[0]
+        splits, params = [], []
+        for f in range(n_folds):
+            left = counts - held[:, f]
+            splits.append((np.flatnonzero(left > 0), np.flatnonzero(held[:, f] > 0)))
+            params.append({"sample_weight": left.astype(float)})
+        short = [f for f, (train, _) in enumerate(splits)
+                 if np.unique(y_index[train]).shape[0] < n_classes]
+        if short:
+            warnings.warn(
+                f"Some classes are absent from the training part of fold(s) {short[:5]}; the "
+                "models fitted there give those classes a held-out probability of 0 (or the "
+                "lowest score). Use fewer folds or more rows of the rare classes.",
+                UserWarning,
+                stacklevel=4,
+            )
+        try:
+            blocks = self._cross_fit_blocks(X, y, splits, params, response, classes)
+        except FoldScoringError as exc:
+            raise ValueError(self._fold_scoring_failure(X, splits, response, exc)) from exc
+        except ValueError as exc:  # (numpy's LinAlgError is a ValueError)
+            raise ValueError(self._fold_failure(X, y, y_index, classes, splits, est_params,
+                                                exc)) from exc
+        estimator = clone(self.estimator).fit(X, y, **est_params)
+        if np.unique(np.asarray(y_index)[sw > 0]).shape[0] < 2:
+            raise ValueError(
+                "Only one class has a positive `sample_weight`; at least two classes must "
+                "carry weight."
+            )
+        warn_weightless_classes(self, classes, np.asarray(y_index), sw, stacklevel=4)
+        start = np.flatnonzero(np.concatenate([
+            [True], (cases[1:] != cases[:-1]) | (case_fold[1:] != case_fold[:-1])]))
+        row, fold = cases[start], case_fold[start]
+        size = np.diff(np.append(start, cases.shape[0]))
+        offset = np.cumsum([0] + [test.shape[0] for _, test in splits])
+        at = np.empty(row.shape[0], dtype=np.intp)
+        for f, (_, test) in enumerate(splits):
+            mine = fold == f
+            at[mine] = offset[f] + np.searchsorted(test, row[mine])
+        values = np.concatenate(blocks, axis=0)[at]
+        if not np.all(np.isfinite(values)):
+            raise ValueError(
+                f"`estimator` returned NaN or infinite values from {response}; held-out "
+                "predictions must be finite."
+            )
+        check_model_probabilities(values, response, "`estimator`", "held-out rows")
+        self.estimator_ = estimator
+        self.classes_ = np.asarray(classes)
+        if hasattr(estimator, "n_features_in_"):
+            self.n_features_in_ = estimator.n_features_in_
+        if hasattr(estimator, "feature_names_in_"):
+            self.feature_names_in_ = estimator.feature_names_in_
+        ho = HeldOutPredictions(
+            values=values,
+            response=response,
+            classes=self.classes_,
+            y_index=np.asarray(y_index, dtype=int)[row],
+            sample_weight=size.astype(float),
+            fold=fold,
+            n_folds=n_folds,
+            estimator=estimator,
+            cells=None,
+            case_cells=None if copies is None else copies[row],
+        )
+        ho.table_row = row
+        ho.row_weight = sw
+        return ho
 
     def _splits_keeping_cells(
         self, splits: list, fold: np.ndarray, cells: np.ndarray, y_index: np.ndarray
@@ -971,24 +1121,32 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         prediction) keep their meaning. A class absent from a training part gets probability 0
         in its column, or a score 50 below the row's lowest score.
         """
-        X = indexable(X)[0]  # sparse formats without row indexing become CSR, as in scikit-learn
-        keep = bool(getattr(self, "_keep_fold_models", False))
-        results = Parallel(n_jobs=self.n_jobs)(
-            delayed(_fit_predict_fold)(self.estimator, X, y, train, test, est_params, response,
-                                       keep, i)
-            for i, (train, test) in enumerate(splits)
-        )
+        blocks = self._cross_fit_blocks(X, y, splits, [est_params] * len(splits), response,
+                                        classes)
         n = y.shape[0]
         values = None
-        for (_, test), (fold_classes, out, _) in zip(splits, results, strict=True):
-            block = fold_columns(fold_classes, out, classes, response)
+        for (_, test), block in zip(splits, blocks, strict=True):
             if values is None:
                 values = np.empty((n,) + block.shape[1:], dtype=float)
             values[test] = block
+        return values
+
+    def _cross_fit_blocks(self, X, y, splits, fold_params, response, classes) -> list:
+        """Each split's held-out ``response`` (in ``classes`` columns) of a clone fitted on its
+        training rows with that split's ``fold_params``; keeps the fold models where the
+        wrapper asks (``_keep_fold_models``)."""
+        X = indexable(X)[0]  # sparse formats without row indexing become CSR, as in scikit-learn
+        keep = bool(getattr(self, "_keep_fold_models", False))
+        results = Parallel(n_jobs=self.n_jobs)(
+            delayed(_fit_predict_fold)(self.estimator, X, y, train, test, params, response,
+                                       keep, i)
+            for i, ((train, test), params) in enumerate(zip(splits, fold_params, strict=True))
+        )
         # the fold models, for a wrapper that scores new rows with them too (PriorShiftWrapper)
         self._fold_models = [(model, fold_classes) for fold_classes, _, model in results] \
             if keep else None
-        return values
+        return [fold_columns(fold_classes, out, classes, response)
+                for fold_classes, out, _ in results]
 
     # -- prediction helpers ----------------------------------------------------------------
     def _dask_predict(self, method: Any, X: Any, n_columns: int | None, dtype: Any = float):
