@@ -441,6 +441,10 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             template = self.method
         elif self.method == "auto":
             self.method_, self.method_scores_, self.method_notes_ = self._choose(ho, scores, w)
+            if ho.values.ndim == 2 and ho.values.shape[1] == 2:
+                self._warn_overdispersed_table(
+                    ho, ho.values[:, 1], "`method='auto'`'s choice (its folds, rows per class "
+                    "and standard errors)")
             template = CALIBRATION_METHODS.get(self.method_, PlattMap)()
             counts = ho.class_row_counts(w)
             if counts[counts > 0].min() >= 2:

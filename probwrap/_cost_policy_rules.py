@@ -567,6 +567,8 @@ class _RuleFitting:
                     cases=not (ho.n_folds > 0 and getattr(ho, "cells", None) is not None),
                 )
             self.cutoff_anchor_ = float(anchor)
+            self._warn_overdispersed_table(
+                ho, p, "the tuned cutoff's anchor and settling test")
             self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res,
                                          sample_weight=ho.sample_weight, anchor=anchor).cutoff
             self._warn_few_class_rows(ho)

@@ -822,17 +822,16 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
     def _table_case_folds(
         self, X: Any, y: np.ndarray, y_index: np.ndarray, classes: np.ndarray,
         sw: np.ndarray | None, est_params: dict, split_params: dict,
-    ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None] | None:
-        """For a count table cross-fitted on ``cv`` folds: ``(counts, fold, copies)``, with
-        ``fold`` the fold of every case (the rows repeated by their counts, in order) and
-        ``copies`` the cells the repeated rows would keep together (:func:`feature_cells`
-        without weights), else None (the table's rows are the units of the folds, as before
-        session 27).
+    ) -> tuple[np.ndarray, np.ndarray] | None:
+        """For a count table cross-fitted on ``cv`` folds: ``(counts, fold)``, with ``fold``
+        the fold of every case (the rows repeated by their counts, in order), else None (the
+        table's rows are the units of the folds, as before session 27).
 
         The cases are split by the wrapper's own splitter (stratified, shuffled with
         ``random_state``) run on the labels of the rows repeated in order, so a table and
-        ``np.repeat`` of its rows get the same folds of cases. Not used when the model takes
-        no ``sample_weight`` (its fold models could not see the counts), with other fit
+        ``np.repeat`` of its rows get the same folds of cases. Not used where the repeated
+        rows would be copies of a row (:func:`copied_row_cells`: they would be kept in one fold,
+        so the cells are the units either way), when the model takes no ``sample_weight`` (its fold models could not see the counts), with other fit
         parameters or splitter groups, with folds given as ``cv``, or where the wrapper says
         so (:attr:`_split_table_cases`).
         """
@@ -846,6 +845,12 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         counts = whole_counts(sw)
         if counts is None:
             return None
+        copies = feature_cells(X, None, y_index)
+        if copies is not None:
+            # the repeated rows' copies of a row (a value found in no other row, as star98's
+            # district measurements) would stay in one fold: such a table's cells are the units
+            # of the folds either way, and it keeps its rows as the folds' units (session 26)
+            return None
         cases = np.repeat(np.arange(counts.shape[0]), counts)
         y_cases = y[cases]
         splitter = self._make_splitter(y_cases)
@@ -858,22 +863,11 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         fold = np.empty(cases.shape[0], dtype=np.intp)
         for i, (_, test) in enumerate(splits):
             fold[test] = i
-        copies = feature_cells(X, None, y_index)
-        if copies is not None:
-            # the repeated rows' copies of a row (a value found in no other row, as star98's
-            # district measurements) stay in one fold, as they would for the rows repeated
-            # (unless that leaves a training part without a class, as the rows' folds do)
-            kept = keep_cells_together(fold, copies[cases])
-            if int(kept.max()) + 1 >= 2 and all(
-                    np.unique(y_cases[kept != i]).shape[0] == classes.shape[0]
-                    for i in range(int(kept.max()) + 1)):
-                fold = kept
-        return counts, fold, copies
+        return counts, fold
 
     def _fit_heldout_table(
         self, X: Any, y: np.ndarray, y_index: np.ndarray, classes: np.ndarray, sw: np.ndarray,
         est_params: dict, response: str, counts: np.ndarray, case_fold: np.ndarray,
-        copies: np.ndarray | None,
     ) -> HeldOutPredictions:
         """Held-out predictions of a count table cross-fitted by its cases
         (:meth:`_table_case_folds`): fold ``f``'s model is fitted on the rows with the cases
@@ -949,11 +943,33 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             n_folds=n_folds,
             estimator=estimator,
             cells=None,
-            case_cells=None if copies is None else copies[row],
+            case_cells=None,  # (no copies: see _table_case_folds)
         )
         ho.table_row = row
         ho.row_weight = sw
+        groups = feature_cells(X, sw, y_index)  # (for the check of groups that vary more)
+        ho.table_groups = None if groups is None else groups[row]
         return ho
+
+    def _warn_overdispersed_table(self, ho: HeldOutPredictions, p: np.ndarray | None,
+                                  what: str) -> None:
+        """Warn when a binary count table read as cases (a frozen model's, or one
+        cross-fitted by its cases) has groups of identical features that vary more than
+        binomial around the held-out probabilities ``p`` (of the second class)
+        (:func:`probwrap._weights.warn_overdispersed_table`)."""
+        from ._weights import warn_overdispersed_table
+
+        if p is None or ho.from_tally or ho.response != "predict_proba" or len(ho.classes) != 2:
+            return
+        table = getattr(ho, "table_row", None) is not None
+        if table:
+            groups = getattr(ho, "table_groups", None)
+        elif ho.n_folds == 0 and whole_counts(np.asarray(ho.sample_weight)) is not None:
+            groups = ho.cells
+        else:
+            return
+        warn_overdispersed_table(p, ho.y_index, ho.sample_weight, groups, type(self).__name__,
+                                 what, stacklevel=5)
 
     def _splits_keeping_cells(
         self, splits: list, fold: np.ndarray, cells: np.ndarray, y_index: np.ndarray

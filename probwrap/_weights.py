@@ -17,7 +17,8 @@ from ._validation import COUNT_TABLE_MAX_CASES, case_rows, counted_rows, shared_
 from .calibration._base import WeightScaleWarning, count_weights
 
 __all__ = ["COUNT_TABLE_MAX_CASES", "case_rows", "count_scale_weights", "counted_rows",
-           "shared_factor", "warn_count_reading", "warn_count_summary", "whole_counts"]
+           "shared_factor", "table_dispersion", "warn_count_reading", "warn_count_summary",
+           "warn_overdispersed_table", "whole_counts"]
 
 
 def count_scale_weights(w: np.ndarray, owner: str, what: str, *, stacklevel: int = 4) -> np.ndarray:
@@ -105,3 +106,114 @@ def warn_count_summary(
         WeightScaleWarning,
         stacklevel=stacklevel,
     )
+
+
+#: A count table's groups vary more than binomial when Pearson's dispersion around a Platt
+#: map of the held-out scores exceeds this (the quasi-binomial scale of McCullagh & Nelder
+#: 1989, sec. 4.5; 2 is common practice for "clearly overdispersed") and the chi-square test of
+#: that statistic rejects at :data:`OVERDISPERSION_PVALUE`.
+OVERDISPERSION_LIMIT = 2.0
+OVERDISPERSION_PVALUE = 1e-3
+#: Fewest groups (rows of identical features, both labels counted) for the check.
+OVERDISPERSION_MIN_GROUPS = 10
+
+
+def table_dispersion(
+    p: np.ndarray, y: np.ndarray, w: np.ndarray, groups: np.ndarray
+) -> tuple[float, float, int] | None:
+    """Pearson's dispersion of a count table's groups around a Platt map of held-out
+    probabilities: ``(dispersion, p-value, groups)``, or None when it cannot be judged.
+
+    ``p`` is each held-out row's probability of the second class, ``y`` its 0/1 label, ``w``
+    its whole-number count, ``groups`` the group of each row (rows of identical features: a
+    cell's success and failure rows; the (row, fold) pieces of a cross-fitted table keep their
+    row's group). A two-parameter logistic map of the log-odds is fitted by weighted maximum
+    likelihood (Newton's method: a binomial GLM with one covariate), then, over the groups,
+    ``X2 = sum_g (O_g - E_g)**2 / V_g`` with ``O_g`` the group's counted successes and
+    ``E_g``, ``V_g`` the sums of ``w q`` and ``w q (1 - q)`` over its rows (``q`` the mapped
+    probability); the dispersion is ``X2 / (G - 2)`` and the p-value the chi-square upper
+    tail with ``G - 2`` degrees of freedom. With one row probability per group this is
+    statsmodels' ``GLM(Binomial).pearson_chi2 / df_resid`` on the groups (tested).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rng = np.random.default_rng(0)
+    >>> p = np.repeat(rng.uniform(0.2, 0.8, 40), 2)
+    >>> y = np.tile([1, 0], 40)
+    >>> k = rng.binomial(50, p[::2])  # binomial groups of 50 cases
+    >>> w = np.column_stack([k, 50 - k]).ravel().astype(float)
+    >>> d, pv, g = table_dispersion(p, y, w, np.repeat(np.arange(40), 2))
+    >>> g, bool(0.5 < d < 2)
+    (40, True)
+    """
+    from scipy import stats
+    from scipy.special import expit
+
+    p = np.clip(np.asarray(p, dtype=float), 1e-12, 1 - 1e-12)
+    y = np.asarray(y, dtype=float)
+    w = np.asarray(w, dtype=float)
+    groups = np.asarray(groups, dtype=np.intp)
+    keep = w > 0
+    p, y, w, groups = p[keep], y[keep], w[keep], groups[keep]
+    _, groups = np.unique(groups, return_inverse=True)
+    n_groups = int(groups.max()) + 1 if groups.size else 0
+    if n_groups < OVERDISPERSION_MIN_GROUPS:
+        return None
+    s = np.log(p) - np.log1p(-p)
+    design = np.column_stack([np.ones_like(s), s])
+    beta = np.zeros(2)
+    for _ in range(50):
+        q = expit(design @ beta)
+        grad = design.T @ (w * (y - q))
+        hess = design.T @ (design * (w * q * (1 - q))[:, None])
+        try:
+            step = np.linalg.solve(hess, grad)
+        except np.linalg.LinAlgError:
+            return None
+        beta = beta + step
+        if not np.all(np.isfinite(beta)):
+            return None
+        if np.max(np.abs(step)) < 1e-10:
+            break
+    q = expit(design @ beta)
+    observed = np.bincount(groups, weights=w * y, minlength=n_groups)
+    expected = np.bincount(groups, weights=w * q, minlength=n_groups)
+    variance = np.bincount(groups, weights=w * q * (1 - q), minlength=n_groups)
+    ok = variance > 1e-12
+    dof = int(ok.sum()) - 2
+    if dof < OVERDISPERSION_MIN_GROUPS - 2:
+        return None
+    x2 = float(np.sum((observed[ok] - expected[ok]) ** 2 / variance[ok]))
+    return x2 / dof, float(stats.chi2.sf(x2, dof)), int(ok.sum())
+
+
+def warn_overdispersed_table(
+    p: np.ndarray, y: np.ndarray, w: np.ndarray, groups: np.ndarray | None, owner: str,
+    what: str, *, stacklevel: int = 4,
+) -> float | None:
+    """Warn (``UserWarning`` naming ``owner``) when a count table read as cases has groups
+    that vary more than binomial (:func:`table_dispersion` above
+    :data:`OVERDISPERSION_LIMIT`, p below :data:`OVERDISPERSION_PVALUE`): ``what`` (the
+    steps that count its cases) is then too sure. Returns the dispersion (None when not
+    judged)."""
+    if groups is None:
+        return None
+    res = table_dispersion(p, y, w, groups)
+    if res is None:
+        return None
+    dispersion, pvalue, n_groups = res
+    if dispersion > OVERDISPERSION_LIMIT and pvalue < OVERDISPERSION_PVALUE:
+        warnings.warn(
+            f"{owner}: the count table's {n_groups} groups (rows with identical features) vary "
+            f"more than binomial around the held-out probabilities (Pearson dispersion "
+            f"{dispersion:.3g}, p = {pvalue:.2g}). Either the model misses what sets the "
+            "groups apart, or the cases of a group share causes (pupils of one school, parcels "
+            f"of one route); then every case counts as independent evidence in {what}, about "
+            f"{dispersion:.3g} times too much. If so, pass the weights divided by their sum, "
+            "so that the table's rows count by Kish's effective size (docs/aggregated_outcomes"
+            ".md, \"When groups vary more than binomial\").",
+            UserWarning,
+            stacklevel=stacklevel,
+        )
+    return dispersion
