@@ -74,9 +74,13 @@ def null_draw(p, yt, wt, groups, rng):
     beta = np.zeros(2)
     for _ in range(50):
         q = expit(design @ beta)
+        if not np.all(np.isfinite(q)):
+            return None
         beta += np.linalg.solve(design.T @ (design * (wt * q * (1 - q))[:, None]),
                                 design.T @ (wt * (yt - q)))
     q = expit(design @ beta)
+    if not np.all(np.isfinite(q)):
+        return None
     n_g = np.round(np.bincount(groups, weights=wt)).astype(int)
     q_g = np.clip(np.bincount(groups, weights=wt * q) / np.maximum(n_g, 1), 0.0, 1.0)
     k = rng.binomial(n_g, q_g)
@@ -106,9 +110,9 @@ def main() -> None:
                     m.fit(X[fit], y[fit])
                     fired, res, p, groups = check(m, Xt, yt, wt)
                     out.append((fired, np.nan if res is None else res[0]))
-                    if res is not None:
-                        pn, yn, wn, gn = null_draw(p, yt, wt, groups, rng)
-                        r = table_dispersion(pn, yn, wn, gn)
+                    redrawn = None if res is None else null_draw(p, yt, wt, groups, rng)
+                    if redrawn is not None:
+                        r = table_dispersion(*redrawn)
                         null.append(r is not None and r[0] > 2 and r[1] < 1e-3)
         d = np.array([o[1] for o in out])
         print(f"{name}: {len(out)} draws, warned {sum(o[0] for o in out)}, judged "

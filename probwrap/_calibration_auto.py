@@ -577,11 +577,12 @@ class _AutoChoice:
         leave_cells_out = ho.n_folds > 0 and getattr(ho, "cells", None) is not None
         cases = (None if getattr(ho, "from_tally", False) or leave_cells_out
                  or not getattr(self, "_count_table_cases", True) else case_rows(w))
-        if getattr(ho, "table_row", None) is not None and getattr(self, "_count_table_cases",
-                                                                    True):
+        if ((getattr(ho, "table_row", None) is not None or getattr(ho, "tally_cases", False))
+                and getattr(self, "_count_table_cases", True)):
             # a count table cross-fitted by its cases (session 27): the held-out rows are
             # (row, fold) pieces weighted by the cases held out there, whole numbers even when
-            # they happen to share a factor
+            # they happen to share a factor; or a Dask or Spark tally of a count table's rows,
+            # whose (bin, class) rows are weighted by their cases
             cases = np.repeat(np.arange(w.shape[0]), np.round(w).astype(np.int64))
         if cases is not None:
             # a count table (whole-number weights, some above 1): the choice scores its cases

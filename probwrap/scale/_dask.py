@@ -377,7 +377,13 @@ def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, respo
         owner.n_features_in_ = estimator.n_features_in_
     if hasattr(estimator, "feature_names_in_"):
         owner.feature_names_in_ = estimator.feature_names_in_
-    return HeldOutPredictions(
+    class_rows = tally.weighted_rows_by_label
+    cases = from_tally and tally_is_count_table(tally)
+    if cases:
+        # a count table's tally (session 27): its weights count cases, as in memory, where
+        # the steps that count rows count the table's cases (docs/weights.md)
+        class_rows = np.round(np.asarray(tally.label_weight, dtype=float)).astype(np.int64)
+    ho = HeldOutPredictions(
         values=values,
         response=response,
         classes=classes,
@@ -387,8 +393,27 @@ def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, respo
         n_folds=0,
         estimator=estimator,
         from_tally=from_tally,
-        weighted_class_rows=tally.weighted_rows_by_label,
+        weighted_class_rows=class_rows,
     )
+    ho.tally_cases = cases
+    return ho
+
+
+def tally_is_count_table(tally: ScoreTally) -> bool:
+    """Whether the rows behind ``tally`` carried a count table's weights
+    (:func:`probwrap._weights.whole_counts`): whole numbers without a common factor above 1,
+    some above 1, at most ``COUNT_TABLE_MAX_CASES`` cases in all, tallied without rescaling.
+    Read from the tally's summary (its shared whole factor, total weight and rows of positive
+    weight), so a Dask or Spark tally reads such weights as cases, as the rows in memory do."""
+    from .._weights import COUNT_TABLE_MAX_CASES
+
+    if tally.weight_factor != 1 or getattr(tally, "weight_unit", 1.0) != 1.0:
+        return False
+    rows = tally.weighted_rows_by_label
+    if rows is None:
+        return False
+    total = float(tally.total_weight)
+    return int(np.sum(rows)) < total <= COUNT_TABLE_MAX_CASES
 
 
 def _warn_binned_rows(owner: str, tally: ScoreTally, *, stacklevel: int) -> None:
