@@ -115,6 +115,8 @@ def main() -> None:
                         r = table_dispersion(*redrawn)
                         null.append(r is not None and r[0] > 2 and r[1] < 1e-3)
         d = np.array([o[1] for o in out])
+        print(f"{name}: dispersion above 4: {int(np.sum(d > 4))}, above 10: "
+              f"{int(np.sum(d > 10))}")
         print(f"{name}: {len(out)} draws, warned {sum(o[0] for o in out)}, judged "
               f"{int(np.isfinite(d).sum())}, dispersion median {np.nanmedian(d):.3g} largest "
               f"{np.nanmax(d):.3g}; binomial redraws warned {sum(null)} of {len(null)}",
