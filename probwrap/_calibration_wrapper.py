@@ -24,6 +24,7 @@ from ._heldout import (
 )
 from ._predictions import HeldOutPredictions
 from ._validation import plain
+from ._weights import warn_shared_factor_table
 from .calibration._base import (
     CalibrationMap,
     FewClassRowsWarning,
@@ -441,6 +442,11 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             template = self.method
         elif self.method == "auto":
             self.method_, self.method_scores_, self.method_notes_ = self._choose(ho, scores, w)
+            if not ho.from_tally:
+                warn_shared_factor_table(
+                    ho.sample_weight, "CalibrationWrapper(method='auto')",
+                    "its choice (its folds, rows per class and standard errors) and its row "
+                    "bounds", stacklevel=4)
             if ho.values.ndim == 2 and ho.values.shape[1] == 2:
                 self._warn_overdispersed_table(
                     ho, ho.values[:, 1], "`method='auto'`'s choice (its folds, rows per class "

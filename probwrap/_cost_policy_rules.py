@@ -20,7 +20,7 @@ from ._column_models import ProbabilityColumn
 from ._cost_policy_summary import CURVE_POINTS, SMALL_HELDOUT_ROWS, _heldout_summary
 from ._heldout import row_count
 from ._validation import plain
-from ._weights import counted_rows
+from ._weights import counted_rows, warn_shared_factor_table
 from .calibration._base import FewClassRowsWarning, WeightScaleWarning, count_weights
 from .decision import (
     apply_class_offsets,
@@ -569,6 +569,10 @@ class _RuleFitting:
             self.cutoff_anchor_ = float(anchor)
             self._warn_overdispersed_table(
                 ho, p, "the tuned cutoff's anchor and settling test")
+            if not getattr(ho, "from_tally", False):
+                warn_shared_factor_table(
+                    ho.sample_weight, "CostPolicyWrapper(strategy='tuned')",
+                    "the map behind the cutoff's anchor and its row bounds", stacklevel=4)
             self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res,
                                          sample_weight=ho.sample_weight, anchor=anchor).cutoff
             self._warn_few_class_rows(ho)

@@ -18,7 +18,7 @@ from .calibration._base import WeightScaleWarning, count_weights
 
 __all__ = ["COUNT_TABLE_MAX_CASES", "case_rows", "count_scale_weights", "counted_rows",
            "shared_factor", "table_dispersion", "warn_count_reading", "warn_count_summary",
-           "warn_overdispersed_table", "whole_counts"]
+           "warn_overdispersed_table", "warn_shared_factor_table", "whole_counts"]
 
 
 def count_scale_weights(w: np.ndarray, owner: str, what: str, *, stacklevel: int = 4) -> np.ndarray:
@@ -217,3 +217,33 @@ def warn_overdispersed_table(
             stacklevel=stacklevel,
         )
     return dispersion
+
+
+def warn_shared_factor_table(w: np.ndarray, owner: str, what: str, *,
+                             stacklevel: int = 4) -> None:
+    """Warn (:class:`~probwrap.calibration.WeightScaleWarning` naming ``owner``) when unequal
+    whole-number weights all share a factor above 1 (and their total over it is at most
+    :data:`COUNT_TABLE_MAX_CASES`): ``what`` (the steps that count a count table's cases) read
+    them as relative weights, since a shared factor cannot be told from a scale; a genuine
+    table whose counts are all even is read that way too, and
+    :func:`probwrap.aggregated.keep_as_counts` says that it is a table (session 27)."""
+    w = np.asarray(w, dtype=float)
+    positive = w[w > 0]
+    if not positive.size or float(positive.min()) == float(positive.max()):
+        return
+    factor = shared_factor(w)
+    if factor is None or factor == 1 or float(w.sum()) / factor > COUNT_TABLE_MAX_CASES:
+        return
+    u = positive / float(positive.max())
+    kish = float(u.sum() ** 2 / (u @ u))
+    warnings.warn(
+        f"{owner}: every `sample_weight` is a multiple of {factor}, so the weights are read as "
+        f"relative ones, not as counts of cases: {what} count the rows by Kish's effective "
+        f"size ({kish:.4g} rows), not as {float(w.sum()):.6g} cases (a factor shared by every "
+        "weight cannot be told from a scale, and scaling the weights must not change a "
+        "choice). If they are counts of a table whose counts happen to share a factor, pass "
+        "X, y, sample_weight through probwrap.aggregated.keep_as_counts, which splits one "
+        "row in two so that the table is read as its cases.",
+        WeightScaleWarning,
+        stacklevel=stacklevel,
+    )

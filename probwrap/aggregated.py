@@ -27,6 +27,7 @@ __all__ = [
     "binomial_log_likelihood",
     "count_calibration_test",
     "expand_counts",
+    "keep_as_counts",
     "rates_to_counts",
     "tally_counts",
 ]
@@ -410,3 +411,66 @@ def count_calibration_test(
         observed=np.array([k[part].sum() for part in parts]),
         expected=np.array([(n[part] * p[part]).sum() for part in parts]),
     )
+
+
+def keep_as_counts(X: Any, y: Any, sample_weight: Any) -> tuple[Any, np.ndarray, np.ndarray]:
+    """A count table whose counts all share a factor, with one row split in two so that they
+    do not: ``(X, y, sample_weight)`` read as the table's cases.
+
+    The steps that count rows (``CalibrationWrapper(method="auto")``'s choice, the tuned
+    cutoff's anchor, the exact cutoff range, the cross-fitting folds) read whole-number weights
+    as counts of cases only when they share no factor above 1: weights that are all multiples
+    of some ``f`` cannot be told from relative weights scaled by ``f``, and scaling every
+    weight must not change a choice (docs/weights.md). A genuine table whose counts are all
+    even is then read as relative weights (with a ``WeightScaleWarning``). This splits the
+    first row of the largest count ``c`` into a row of ``c - 1`` (in place of it) and a copy of
+    that row of count 1 (appended), which stands for the same cases, so the table is read as
+    its cases. Weights without a shared factor above 1, or not all whole numbers, come back
+    unchanged (as arrays; ``X`` as given). The inputs are not modified.
+
+    Parameters
+    ----------
+    X : array-like or DataFrame of shape (n, d)
+        The table's features, one row per cell.
+    y : array-like of shape (n,)
+        The label of each row.
+    sample_weight : array-like of shape (n,)
+        Whole-number counts, not all 0.
+
+    Returns
+    -------
+    X, y, sample_weight
+        With one more row when the counts shared a factor (a DataFrame stays a DataFrame).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.aggregated import keep_as_counts
+    >>> X2, y2, w2 = keep_as_counts(np.array([[0.0], [1.0]]), [1, 0], [4, 6])
+    >>> X2.ravel().tolist(), y2.tolist(), w2.tolist()
+    ([0.0, 1.0, 1.0], [1, 0, 0], [4.0, 5.0, 1.0])
+    """
+    from ._validation import check_sample_weight, shared_factor
+
+    y_arr = np.asarray(y)
+    if y_arr.ndim != 1:
+        raise ValueError(f"`y` must be 1-d of shape (n,); got shape {y_arr.shape}.")
+    n = y_arr.shape[0]
+    if _n_rows(X) != n:
+        raise ValueError(f"`X` has {_n_rows(X)} rows but `y` has {n}; give one label per row.")
+    w = check_sample_weight(sample_weight, n)
+    factor = shared_factor(w)
+    if factor is None or factor == 1:
+        return X, y_arr, w
+    i = int(np.argmax(w))
+    w_out = np.append(w, 1.0)
+    w_out[i] -= 1.0
+    y_out = np.append(y_arr, y_arr[i])
+    if hasattr(X, "iloc"):
+        import pandas as pd
+
+        X_out = pd.concat([X, X.iloc[[i]]], ignore_index=True)
+    else:
+        X_arr = np.asarray(X)
+        X_out = np.concatenate([X_arr, X_arr[i:i + 1]], axis=0)
+    return X_out, y_out, w_out
