@@ -444,7 +444,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             self.method_, self.method_scores_, self.method_notes_ = self._choose(ho, scores, w)
             if not ho.from_tally:
                 warn_shared_factor_table(
-                    ho.sample_weight, "CalibrationWrapper(method='auto')",
+                    getattr(ho, "row_weight", None) if getattr(ho, "table_row", None) is not None
+                    else ho.sample_weight, "CalibrationWrapper(method='auto')",
                     "its choice (its folds, rows per class and standard errors) and its row "
                     "bounds", stacklevel=4)
             if ho.values.ndim == 2 and ho.values.shape[1] == 2:

@@ -571,7 +571,8 @@ class _RuleFitting:
                 ho, p, "the tuned cutoff's anchor and settling test")
             if not getattr(ho, "from_tally", False):
                 warn_shared_factor_table(
-                    ho.sample_weight, "CostPolicyWrapper(strategy='tuned')",
+                    getattr(ho, "row_weight", None) if getattr(ho, "table_row", None) is not None
+                    else ho.sample_weight, "CostPolicyWrapper(strategy='tuned')",
                     "the map behind the cutoff's anchor and its row bounds", stacklevel=4)
             self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res,
                                          sample_weight=ho.sample_weight, anchor=anchor).cutoff

@@ -75,6 +75,13 @@ class HeldOutPredictions:
         rows repeated would, since session 26); for tally rows the original rows' counts."""
         if self.from_tally and self.weighted_class_rows is not None:
             return np.asarray(self.weighted_class_rows, dtype=np.int64)
+        if getattr(self, "table_row", None) is not None:
+            # a count table cross-fitted by its cases: runs of cases weighted by their length,
+            # whole numbers even where they happen to share a factor (session 27)
+            return np.bincount(np.asarray(self.y_index, dtype=np.intp),
+                               weights=np.round(np.asarray(w, dtype=float)) * (
+                                   np.asarray(w) > 0),
+                               minlength=len(self.classes)).astype(np.int64)
         return np.bincount(np.asarray(self.y_index, dtype=np.intp), weights=counted_rows(w),
                            minlength=len(self.classes)).astype(np.int64)
 
