@@ -16,6 +16,7 @@ from __future__ import annotations
 import warnings
 
 import numpy as np
+import pandas as pd
 import pytest
 from scipy.special import expit
 from sklearn.frozen import FrozenEstimator
@@ -77,3 +78,25 @@ def test_scaled_count_table_tally_keeps_the_relative_reading(client):
                          da.from_array(w, chunks=1000))
     assert ho.from_tally and ho.tally_cases
     np.testing.assert_array_equal(ho.weighted_class_rows, np.bincount(y, weights=w))
+
+
+@pytest.mark.slow
+@pytest.mark.filterwarnings("ignore:PySpark does not yet fully support pandas")
+def test_spark_tally_of_a_count_table_counts_its_cases(spark):
+    """The same on a Spark DataFrame (weights and label named as its columns)."""
+    pytest.importorskip("pyspark")
+    model, X, y, w = _table()
+    cols = ["x0", "x1", "x2"]
+    df = pd.DataFrame(X, columns=cols).assign(damaged=y, w=w)
+    named = FrozenEstimator(LogisticRegression().fit(
+        pd.DataFrame(X[:10], columns=cols), np.r_[0, 1].repeat(5)))
+    named.estimator.coef_ = model.estimator.coef_.copy()  # the same model, with column names
+    named.estimator.intercept_ = model.estimator.intercept_.copy()
+    mem = _fit(named, df[cols], y, w)
+    tal = _fit(named, spark.createDataFrame(df), "damaged", "w")
+    assert tal.tally_.n_rows == y.shape[0]
+    assert tal.method_ == mem.method_
+    for name, (loss, se) in mem.method_scores_.items():
+        assert tal.method_scores_[name][0] == pytest.approx(loss, abs=2e-3)
+        if se > 0:
+            assert tal.method_scores_[name][1] == pytest.approx(se, rel=0.25)
