@@ -731,13 +731,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         here with their rows (``from_tally`` is False), so they choose the same map (and
         multiclass Dask or Spark sets small enough to be fitted on their collected rows).
         Where none of this holds but the likelihood-ratio test kept a coarse grid of
-        probabilities (a forest's) that the map sharpens by a scale of 1.3 or more, the map
-        predicts instead (``calibrator_.identity_kept_`` set False). Measured in
-        docs/prior_shift.md, "Before adapt on small labelled sets" and "Before adapt: the
-        session-26 changes"."""
+        probabilities (a forest's) that the map sharpens by a scale of 1.3 or more, or
+        probabilities that the map softens (scale below 1) while the rows carry at least two
+        rows' worth of information on its intercept, the map predicts instead
+        (``calibrator_.identity_kept_`` set False). Measured in docs/prior_shift.md, "Before
+        adapt on small labelled sets" and "Before adapt: the session-26 changes" and "the
+        session-27 changes"."""
         from ._prior_shift_output_map import (
             contradicted_confidence,
             fit_output_map,
+            informed_softening,
             under_confident_grid,
         )
 
@@ -745,11 +748,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         p, y_idx, w = est._src
         reason = contradicted_confidence(p, y_idx, w)
         if reason is None:
-            if getattr(cal, "identity_kept_", False) and under_confident_grid(
-                    p, w, float(np.ravel(cal.scale_)[0])):
+            if getattr(cal, "identity_kept_", False) and (
+                    under_confident_grid(p, w, float(np.ravel(cal.scale_)[0]))
+                    or informed_softening(p, w, cal)):
                 # a coarse grid (a forest's votes) that the map sharpens well beyond its
-                # prior: the map predicts, not the floored grid (identity_pvalue_ is still
-                # reported); as for a model refit here
+                # prior, or probabilities the map softens with its intercept tied by the rows:
+                # the map predicts, not the model's own (identity_pvalue_ is still reported);
+                # as for a model refit here
                 cal.identity_kept_ = False
             return
         self.output_map_ = fit_output_map(p, y_idx, None if sample_weight is None else w,
