@@ -174,8 +174,9 @@ def contradicted_confidence(proba: np.ndarray, y_idx: np.ndarray, w: np.ndarray)
         # holds the map near them (SATURATED_SHARE)
         return "saturated"
     # (the model's own probabilities kept by the likelihood-ratio test while the map's scale is
-    # below 1 was measured too and is left alone: it breaks the guarantee for calibrated
-    # models on 20 rows, tests/test_prior_shift_safety.py; docs/prior_shift.md)
+    # below 1: the map chosen by folds there always breaks the guarantee for calibrated models
+    # on 20 rows, tests/test_prior_shift_safety.py; the map predicts there only where the rows
+    # tie its intercept, informed_softening; docs/prior_shift.md)
     return None
 
 
