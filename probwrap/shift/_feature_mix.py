@@ -37,15 +37,29 @@ regression and a random forest) and fired on 4-5 % of batches at 1 %. With two f
 statistics are nearly the same number, the bound is nearly tight (variance ratio 2.02 measured)
 and the test holds its level; with a single held-out half instead (Lopez-Paz & Oquab's recipe)
 the level is exact but the result depends on which half.
+
+Which columns. The discriminator says *whether* the rows differ, not where. Beside it each
+column is compared on its own (session 27): the unlabelled rows' weighted distribution of the
+column against the re-weighted labelled rows', by the two-sample Kolmogorov-Smirnov distance
+(the largest gap between the two weighted empirical distribution functions; a slide, a band
+or a cut of the column all open one) with Smirnov's asymptotic p-value on Kish's effective
+counts (with equal weights SciPy's ``ks_2samp(method="asymp")``, tested), and the p-values of
+the columns corrected for their number by Holm's step-down (Holm 1979, "A simple sequentially
+rejective multiple test procedure", Scand. J. Statist. 6, 65-70; statsmodels'
+``multipletests(method="holm")``, tested). The labelled side is re-weighted class by class as
+for the discriminator, so a change of class shares alone moves no column. Two effect sizes go
+with each: the rank share (the weighted share of pairs in which the unlabelled row's value is
+the higher, ties one half: above 0.5 the new rows lie higher) and the difference of the
+weighted means in standard deviations of the re-weighted labelled column.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy.stats import norm
+from scipy.stats import kstwo, norm
 
 from ._estimate import em_prior
 from ._mixture_fit import _kish
@@ -60,9 +74,11 @@ FEATURE_MISFIT_LEVEL = 0.01
 class FeatureMixtureMisfitWarning(UserWarning):
     """The unlabelled rows' features differ from every re-weighting of the labelled classes.
 
-    :func:`feature_mixture_misfit` found that a classifier tells the unlabelled rows from the
-    labelled rows re-weighted to the estimated class shares better than chance would (p-value
-    below ``level``, 1 % by default). Prior shift, which ``PriorShiftWrapper.adapt`` assumes,
+    :func:`feature_mixture_misfit` (or ``PriorShiftWrapper.adapt`` with
+    ``feature_check_rows``) found that a classifier tells the unlabelled rows from the
+    labelled rows re-weighted to the estimated class shares better than chance would, or that
+    a column on its own differs between them (``combined_pvalue`` below ``level``, 1 % by
+    default); the message names the columns that differ most. Prior shift, which ``PriorShiftWrapper.adapt`` assumes,
     says only the class shares moved; here the rows of a class look different too (a batch
     drawn from a subgroup, a region, a new instrument), so the estimated shares and their
     interval may be off, by more than the interval says. Measured in
@@ -96,6 +112,36 @@ class FeatureMixtureMisfit:
         Kish's effective counts of the unlabelled rows and of the re-weighted labelled rows.
     folds : int
         The number of folds.
+    feature_names : tuple of str
+        The columns' names: a DataFrame's column names or ``feature_names`` when given, else
+        ``x0``, ``x1``, ... (session 27).
+    column_distance : ndarray of shape (d,)
+        Per column: the Kolmogorov-Smirnov distance between the unlabelled rows' weighted
+        distribution and the re-weighted labelled rows' (0: the same; 1: no overlap).
+    column_pvalue : ndarray of shape (d,)
+        Its two-sided p-value (Smirnov's asymptotic distribution on Kish's effective counts),
+        one column at a time.
+    column_pvalue_holm : ndarray of shape (d,)
+        The same corrected for the number of columns by Holm's step-down (Holm 1979): a
+        column with ``column_pvalue_holm < level`` differs at ``level`` whatever the others.
+    column_rank_share : ndarray of shape (d,)
+        The weighted share of (unlabelled, labelled) pairs in which the unlabelled row's value
+        is the higher, ties one half (0.5: neither side higher; above: the new rows lie
+        higher).
+    column_mean_shift : ndarray of shape (d,)
+        The unlabelled rows' weighted mean minus the re-weighted labelled rows', in standard
+        deviations of the re-weighted labelled column (0 where the column is constant on both
+        sides).
+    flagged_columns : tuple of str
+        The columns with ``column_pvalue_holm`` below ``column_level``, most significant first.
+    column_level : float
+        The level the columns were flagged at (``level``, or 1 % where ``level`` is None).
+    combined_pvalue : float
+        ``min(1, 2 min(pvalue, min(column_pvalue_holm)))``: the discriminator and the columns
+        read together (Bonferroni over the two, so it holds its level whatever their
+        dependence). The warning comes when it is below ``level`` (session 27; before, when
+        ``pvalue`` was): a batch that differs in one column is seen by that column's test on
+        far fewer rows than the discriminator needs.
     """
 
     statistic: float
@@ -106,6 +152,49 @@ class FeatureMixtureMisfit:
     classes: np.ndarray
     effective_rows: tuple[float, float]
     folds: int
+    feature_names: tuple[str, ...] = ()
+    column_distance: np.ndarray = field(default_factory=lambda: np.empty(0))
+    column_pvalue: np.ndarray = field(default_factory=lambda: np.empty(0))
+    column_pvalue_holm: np.ndarray = field(default_factory=lambda: np.empty(0))
+    column_rank_share: np.ndarray = field(default_factory=lambda: np.empty(0))
+    column_mean_shift: np.ndarray = field(default_factory=lambda: np.empty(0))
+    flagged_columns: tuple[str, ...] = ()
+    column_level: float = FEATURE_MISFIT_LEVEL
+    combined_pvalue: float = float("nan")
+
+    def column_order(self) -> np.ndarray:
+        """The columns' indices from the most to the least significant (Holm-corrected
+        p-value, then the distance, then the column's position)."""
+        d = len(self.feature_names)
+        return np.lexsort((np.arange(d), -np.asarray(self.column_distance),
+                           np.asarray(self.column_pvalue_holm)))
+
+    def describe_columns(self, top: int = 3) -> str:
+        """One line naming the ``top`` columns that differ most, with their effect sizes.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> from probwrap.shift import feature_mixture_misfit
+        >>> rng = np.random.default_rng(0)
+        >>> y = rng.integers(0, 2, 400)
+        >>> X = rng.normal(y[:, None], 1.0, (400, 3))
+        >>> X_new = rng.normal(rng.integers(0, 2, 300)[:, None], 1.0, (300, 3)) + [0, 0, 1.0]
+        >>> res = feature_mixture_misfit(X, y, X_new, level=None)
+        >>> res.flagged_columns
+        ('x2',)
+        >>> res.describe_columns(top=1).startswith("x2 (new rows higher")
+        True
+        """
+        parts = []
+        for j in self.column_order()[:top]:
+            share = float(self.column_rank_share[j])
+            way = "higher" if share > 0.5 else "lower" if share < 0.5 else "neither higher"
+            parts.append(
+                f"{self.feature_names[j]} (new rows {way}: mean {self.column_mean_shift[j]:+.2f} "
+                f"SD, rank share {share:.2f}, distribution gap {self.column_distance[j]:.2f}, "
+                f"Holm p = {self.column_pvalue_holm[j]:.2g})")
+        return "; ".join(parts)
 
 
 def _check_matrix(X: Any, name: str) -> np.ndarray:
@@ -157,6 +246,95 @@ def _weighted_auc(s_u: np.ndarray, w_u: np.ndarray, s_l: np.ndarray,
     v = float(np.dot(p, (mid - np.dot(p, mid)) ** 2))
     var = v * (1.0 / n_u + 1.0 / n_l) * n / max(n - 1.0, 1e-12)
     return auc, var
+
+
+def _weighted_ks(x_u: np.ndarray, w_u: np.ndarray, x_l: np.ndarray,
+                 w_l: np.ndarray) -> tuple[float, float]:
+    """Two-sample Kolmogorov-Smirnov distance between two weighted samples of one column and
+    its two-sided asymptotic p-value (Smirnov's distribution, ``kstwo`` at the rounded
+    effective count ``n_u n_l / (n_u + n_l)`` on Kish's counts, as SciPy's
+    ``ks_2samp(method="asymp")`` with equal weights)."""
+    a = w_u / w_u.sum()
+    b = w_l / w_l.sum()
+    x = np.concatenate([x_u, x_l])
+    order = np.argsort(x, kind="stable")
+    xs = x[order]
+    step = np.concatenate([a, -b])[order]
+    gap = np.cumsum(step)
+    last = np.concatenate([xs[1:] != xs[:-1], [True]])  # the end of each run of ties
+    d = float(np.max(np.abs(gap[last]))) if gap.size else 0.0
+    d = min(d, 1.0)
+    n_u, n_l = _kish(w_u), _kish(w_l)
+    en = max(float(np.round(n_u * n_l / (n_u + n_l))), 1.0)
+    return d, float(np.clip(kstwo.sf(d, en), 0.0, 1.0))
+
+
+def _holm(p: np.ndarray) -> np.ndarray:
+    """Holm's (1979) step-down adjusted p-values: the ``i``-th smallest of ``m`` multiplied by
+    ``m - i + 1`` (``i`` from 1), made non-decreasing in that order, at most 1."""
+    p = np.asarray(p, dtype=float)
+    m = p.size
+    if m == 0:
+        return p.copy()
+    order = np.argsort(p, kind="stable")
+    adj = np.minimum(1.0, np.maximum.accumulate(p[order] * (m - np.arange(m))))
+    out = np.empty(m)
+    out[order] = adj
+    return out
+
+
+def _weighted_mean_sd(x: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    a = w / w.sum()
+    mean = a @ x
+    return mean, np.sqrt(np.maximum(a @ (x - mean) ** 2, 0.0))
+
+
+def _column_tests(X_u: np.ndarray, w_u: np.ndarray, X_l: np.ndarray,
+                  w_l: np.ndarray) -> tuple[np.ndarray, ...]:
+    """Per column: the KS distance, its p-value, the rank share and the mean shift, between
+    the unlabelled rows and the re-weighted labelled rows (rows of weight 0 take no part)."""
+    ku, kl = w_u > 0, w_l > 0
+    X_u, w_u, X_l, w_l = X_u[ku], w_u[ku], X_l[kl], w_l[kl]
+    d = X_u.shape[1]
+    dist, pval, share = np.empty(d), np.empty(d), np.empty(d)
+    for j in range(d):  # one pass per column; the rows inside are vectorised
+        dist[j], pval[j] = _weighted_ks(X_u[:, j], w_u, X_l[:, j], w_l)
+        share[j] = _weighted_auc(X_u[:, j], w_u, X_l[:, j], w_l)[0]
+    mean_u, _ = _weighted_mean_sd(X_u, w_u)
+    mean_l, sd_l = _weighted_mean_sd(X_l, w_l)
+    _, sd_all = _weighted_mean_sd(np.vstack([X_u, X_l]),
+                                  np.concatenate([w_u / w_u.sum(), w_l / w_l.sum()]))
+    # the labelled column's spread; where it is constant there, the pooled one
+    scale = np.where(sd_l > 1e-12 * np.maximum(np.abs(mean_l), 1.0), sd_l, sd_all)
+    diff = mean_u - mean_l
+    shift = np.divide(diff, scale, out=np.zeros(d), where=scale > 0)
+    return dist, pval, share, shift
+
+
+def _column_names(X_labelled: Any, X_unlabelled: Any, feature_names: Any,
+                  d: int) -> tuple[str, ...]:
+    """A DataFrame's column names (both sides' must agree), ``feature_names``, or x0, x1, ..."""
+    got = []
+    for name, X in (("X_labelled", X_labelled), ("X_unlabelled", X_unlabelled)):
+        cols = getattr(X, "columns", None)
+        if cols is not None and hasattr(X, "iloc"):
+            got.append((name, [str(c) for c in cols]))
+    if len(got) == 2 and got[0][1] != got[1][1]:
+        raise ValueError("`X_unlabelled`'s columns differ from `X_labelled`'s "
+                         f"({got[1][1][:5]}... against {got[0][1][:5]}...); pass the same "
+                         "columns in the same order.")
+    if feature_names is not None:
+        names = [str(c) for c in np.asarray(feature_names, dtype=object).ravel()]
+        if len(names) != d:
+            raise ValueError(f"`feature_names` must name each of the {d} columns; got "
+                             f"{len(names)} names.")
+        if got and got[0][1] != names:
+            raise ValueError("`feature_names` differ from the DataFrame's column names "
+                             f"({got[0][1][:5]}...); give one or the other.")
+        return tuple(names)
+    if got:
+        return tuple(got[0][1])
+    return tuple(f"x{j}" for j in range(d))
 
 
 def _with_squares(Z_l, Z_u, w_l0, w_u):
@@ -220,6 +398,7 @@ def feature_mixture_misfit(
     folds: int = 2,
     level: float | None = FEATURE_MISFIT_LEVEL,
     random_state: int | None = 0,
+    feature_names: Any = None,
 ) -> FeatureMixtureMisfit:
     """Test whether unlabelled rows' features fit the labelled classes mixed at new shares.
 
@@ -228,7 +407,8 @@ def feature_mixture_misfit(
     classifier cannot tell the two apart on rows it did not see. This function cross-fits such
     a classifier and tests its held-out ranking of the two sides (a classifier two-sample test,
     Lopez-Paz & Oquab 2017; Rabanser et al. 2019, from memory), and warns with a
-    :class:`FeatureMixtureMisfitWarning` when it does better than chance at ``level``.
+    :class:`FeatureMixtureMisfitWarning` when it does better than chance at ``level`` or a
+    column on its own differs (``combined_pvalue`` below ``level``).
 
     Parameters
     ----------
@@ -263,16 +443,22 @@ def feature_mixture_misfit(
         grows conservative (docs/prior_shift.md, "Features that do not fit the class
         mixture").
     level : float or None, default=0.01
-        Warn with :class:`FeatureMixtureMisfitWarning` when the p-value is below it; None
-        never warns.
+        Warn with :class:`FeatureMixtureMisfitWarning` when ``combined_pvalue`` (the
+        discriminator's p-value and the smallest Holm-corrected column p-value, Bonferroni
+        over the two) is below it, naming the columns flagged at it; None never warns.
     random_state : int or None, default=0
         Seeds the folds.
+    feature_names : sequence of str, default=None
+        The columns' names, for the result and the warning. None: a DataFrame's column names,
+        else ``x0``, ``x1``, ...
 
     Returns
     -------
     FeatureMixtureMisfit
         The statistic, its p-value, the held-out AUC, the shares used and the effective
-        counts.
+        counts; per column the Kolmogorov-Smirnov distance to the re-weighted labelled rows,
+        its p-value raw and Holm-corrected, two effect sizes, and the columns flagged at
+        ``level`` (1 % where ``level`` is None), which the warning names (three at most).
 
     Raises
     ------
@@ -313,6 +499,7 @@ def feature_mixture_misfit(
     if X_u.shape[1] != X_l.shape[1]:
         raise ValueError(f"`X_unlabelled` has {X_u.shape[1]} features, `X_labelled` "
                          f"{X_l.shape[1]}; pass the same columns.")
+    names = _column_names(X_labelled, X_unlabelled, feature_names, X_l.shape[1])
     y = np.asarray(y_labelled)
     if y.ndim != 1 or y.shape[0] != X_l.shape[0]:
         raise ValueError(f"`y_labelled` must be 1-D with one label per row of `X_labelled` "
@@ -385,18 +572,43 @@ def feature_mixture_misfit(
     else:
         stat, auc_all = 0.0, 0.5
     pvalue = float(norm.sf(stat))
+    # each column on its own, on the raw values (ranks and standard deviations: unit-free)
+    dist, col_p, share, shift = _column_tests(X_u, w_u, X_l, w_l)
+    holm = _holm(col_p)
+    col_level = float(level) if level is not None else FEATURE_MISFIT_LEVEL
+    order = np.lexsort((np.arange(dist.size), -dist, holm))
+    flagged = tuple(names[j] for j in order if holm[j] < col_level)
     result = FeatureMixtureMisfit(
         statistic=float(stat), pvalue=pvalue, auc=float(auc_all), prior=p,
         source_prior=source, classes=classes,
-        effective_rows=(_kish(w_u), _kish(w_l)), folds=int(folds))
-    if level is not None and pvalue < level:
-        shares = ", ".join(f"{c}: {v:.3f}" for c, v in zip(classes.tolist(), p, strict=True))
-        warnings.warn(
-            "feature_mixture_misfit: a classifier tells the unlabelled rows from the labelled "
-            f"rows re-weighted to the class shares ({shares}) better than chance (held-out AUC "
-            f"{auc_all:.3f}, p = {pvalue:.2g}): the rows of a class look different from the "
-            "labelled ones, not only the shares, so prior shift does not hold and the "
-            "estimated shares may be off by more than their interval. Look at how the rows "
-            "were drawn; label some of them.",
-            FeatureMixtureMisfitWarning, stacklevel=2)
+        effective_rows=(_kish(w_u), _kish(w_l)), folds=int(folds),
+        feature_names=names, column_distance=dist, column_pvalue=col_p,
+        column_pvalue_holm=holm, column_rank_share=share, column_mean_shift=shift,
+        flagged_columns=flagged, column_level=col_level,
+        combined_pvalue=float(min(1.0, 2.0 * min(pvalue, float(np.min(holm))))))
+    if level is not None and result.combined_pvalue < level:
+        warnings.warn(misfit_message("feature_mixture_misfit", result),
+                      FeatureMixtureMisfitWarning, stacklevel=2)
     return result
+
+
+def misfit_message(who: str, result: FeatureMixtureMisfit, top: int = 3) -> str:
+    """The warning's text: the two readings, then the columns that differ most."""
+    shares = ", ".join(f"{c}: {v:.3f}" for c, v in
+                       zip(result.classes.tolist(), result.prior, strict=True))
+    n_flag = len(result.flagged_columns)
+    if n_flag:
+        cols = (f"{n_flag} of {len(result.feature_names)} columns differ on their own "
+                f"(Holm-corrected p below {result.column_level:g}); most: "
+                f"{result.describe_columns(min(top, n_flag))}.")
+    else:
+        cols = (f"No single column differs at {result.column_level:g} after Holm's "
+                "correction for the columns' number (the difference lies in how they combine, "
+                f"or is spread thin); closest: {result.describe_columns(min(top, 2))}.")
+    return (
+        f"{who}: the unlabelled rows' features do not fit the labelled rows re-weighted to "
+        f"the class shares ({shares}) (p = {result.combined_pvalue:.2g}; a classifier told "
+        f"the two apart with held-out AUC {result.auc:.3f}, p = {result.pvalue:.2g}): the rows "
+        "of a class look different from the labelled ones, not only the shares, so prior "
+        "shift does not hold and the estimated shares may be off by more than their "
+        f"interval. {cols} Look at how the rows were drawn; label some of them.")
