@@ -20,6 +20,12 @@ from ._heldout import (
     rescale_extreme_weights,
     row_count,
 )
+from ._prior_shift_features import (
+    check_feature_check_rows,
+    keep_feature_rows,
+    refuse_distributed,
+    run_feature_check,
+)
 from ._prior_shift_tallied import _tally_rows, tallied_adapt, tallied_monitor
 from ._validation import check_sample_weight, plain
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
@@ -303,6 +309,22 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         / n_classes`` (Bonferroni; Goodman 1965 for multinomial proportions), about 1.2-1.4
         times as wide for 3-10 classes. With two classes the two are the same (one share is
         one minus the other). Measured in docs/prior_shift.md, "All class shares at once".
+    feature_check_rows : int or None, default=None
+        Opt in to a check of the *features* at every ``adapt`` (session 27). None (the
+        default): nothing is kept and nothing is checked. A whole number ``m`` (at least 20;
+        2,000 is a good start): ``fit`` keeps a sample of at most ``m`` labelled rows' numeric
+        features with their labels and weights (stratified by class, every class keeping at
+        least 5 rows or all it has, uniform within a class, seeded by ``random_state``; memory
+        8 bytes per value, ``m`` times the number of columns: 2,000 rows of 30 columns are
+        480 kB, and the pickled wrapper grows by as much), and ``adapt`` compares at most
+        ``m`` of the new rows with them re-weighted to the maximum-likelihood class shares
+        (:func:`probwrap.shift.feature_mixture_misfit`; result in ``feature_check_``),
+        warning with :class:`~probwrap.shift.FeatureMixtureMisfitWarning` below 1 % and naming
+        the columns that differ most. ``fit`` refuses it for features that are not numeric and
+        finite (a sparse matrix, text or category columns, missing values) and for Dask or
+        Spark rows; ``adapt`` refuses Dask or Spark rows while it is set, and does not run
+        the check with ``cells`` (it counts rows as independent), saying so. Measured in
+        docs/prior_shift.md, "Feature check from adapt (session 27)".
 
     Attributes
     ----------
@@ -422,6 +444,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     prior_estimate_ : probwrap.shift.PriorEstimate
         The full record of the last ``adapt`` (maximum-likelihood prior, certified distance to
         the optimum, whether the estimator could identify the priors, ...).
+    feature_check_ : probwrap.shift.FeatureMixtureMisfit or None
+        With ``feature_check_rows`` set: the last ``adapt``'s feature check (overall p-value,
+        and per column the distance to the re-weighted labelled rows, Holm-corrected
+        p-values, effect sizes and ``flagged_columns``); None where it did not run (a warning
+        says why). Set by ``adapt`` only.
 
     Examples
     --------
@@ -467,6 +494,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         keep_heldout: bool = False,
         predict_with: str = "auto",
         interval_covers: str = "each_class",
+        feature_check_rows: int | None = None,
     ) -> None:
         self.estimator = estimator
         self.target_prior = target_prior
@@ -487,6 +515,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self.keep_heldout = keep_heldout
         self.predict_with = predict_with
         self.interval_covers = interval_covers
+        self.feature_check_rows = feature_check_rows
 
     # -- parameters ------------------------------------------------------------------------------
     def _check_params(self) -> None:
@@ -515,6 +544,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if h is not None and not (isinstance(h, numbers.Real) and not isinstance(h, bool)
                                   and np.isfinite(h) and h > 0):
             raise ValueError(f"`max_harm` must be a finite number > 0 or None; got {plain(h)!r}.")
+        check_feature_check_rows(getattr(self, "feature_check_rows", None))
 
     def _resolve_target_prior(self) -> np.ndarray | None:
         prior = self.target_prior
@@ -618,6 +648,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                     "`cells` out."
                 )
             check_cells(cells, _num_rows(X))
+        self.__dict__.pop("feature_check_", None)  # (the last adapt's, before this fit)
+        self._feature_sample = None
+        if getattr(self, "feature_check_rows", None) is not None and (
+                _is_dask(X) or _is_dask(y) or _is_dask(sample_weight)):
+            raise ValueError(
+                "`feature_check_rows` is set, but fit got Dask or Spark rows: the feature "
+                "check keeps a sample of labelled rows in memory and runs there only. Leave "
+                "feature_check_rows=None for Dask or Spark rows.")
         self.predicted_with_ = "refit"
         self.refit_spread_ratios_, self.fold_spread_variation_ = np.empty(0), np.nan
         self._labelled_repeats = None  # (adapt's RepeatedRowsWarning)
@@ -699,6 +737,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         elif self._refit_here:
             self._choose_predicting_models(X, est)
         self._labelled_repeats = self._repeat_counts(X, est, ho.n_folds)
+        # the opt-in feature check: a bounded sample of the labelled rows' features
+        keep_feature_rows(self, X, y, sample_weight)
         return self
 
     def _repeat_reference(self, by_rows: bool = False) -> tuple | None:
@@ -1076,6 +1116,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         """
         check_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to adapt")
+        refuse_distributed(self, X, sample_weight)
         est = self.prior_estimator_
         rs = self.random_state
         source = getattr(self, "_source_tally", None)
@@ -1097,7 +1138,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             self._warn_refit_left_out(folds)
             res = est.estimate(proba, sample_weight, random_state=rs, fold_proba=folds,
                                cells=cells)
-            return self._finish_adapt(res, res.interval)
+            self._finish_adapt(res, res.interval)
+            run_feature_check(self, X, sample_weight, cells)
+            return self
         if multiclass and (_is_dask(X) or _is_dask(sample_weight)):
             # Multiclass Dask rows: EM / BBSE as reductions over the calibrated posteriors on
             # the workers (one pass per EM iteration); with the analytic interval (EM).
@@ -1118,7 +1161,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # (the fold models scored the rows where they live whenever there are any, and
             # every interval computed here reads them: a small set's in-memory estimate with
             # fold_proba, any interval; more rows, EM's class-moment interval; no warning)
-            return self._finish_adapt(res, res.interval)
+            self._finish_adapt(res, res.interval)
+            run_feature_check(self, X, sample_weight, cells)
+            return self
         if _is_dask(X) or _is_dask(sample_weight):
             # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is
             # estimated from the tally's weighted rows. Bootstrapping tally rows would not
@@ -1180,7 +1225,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
                                fold_proba=folds, cells=cells)
             interval = res.interval
-        return self._finish_adapt(res, interval)
+        self._finish_adapt(res, interval)
+        # the opt-in feature check (feature_check_rows; rows in memory only)
+        run_feature_check(self, X, sample_weight, cells)
+        return self
 
     def _warn_repeats_where_rows_live(self, X: Any, sample_weight: Any, ml: np.ndarray,
                                       n_rows: int | None = None, stacklevel: int = 3) -> None:
