@@ -45,6 +45,7 @@ LAYERS = {
     "_prior_shift": 3,
     "_prior_shift_tallied": 3,
     "_prior_shift_output_map": 3,  # PriorShiftWrapper's output map on small sets (fits auto)
+    "_prior_shift_features": 3,  # PriorShiftWrapper's opt-in feature check (feature_check_rows)
     "_weights": 1,  # the shared warnings about how sample_weight is read (wrappers, PriorEstimator)
     "__init__": 3,  # the package's top level: the wrappers' public face
     "plot": 4,
