@@ -34,7 +34,13 @@ from sklearn.utils.metadata_routing import MetadataRouter, MethodMapping, proces
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import column_or_1d, has_fit_parameter
 
-from ._predictions import HeldOutPredictions, check_model_probabilities, rows_summing_to_one
+from ._predictions import (
+    HeldOutPredictions,
+    ModelOutputError,
+    check_model_columns,
+    check_model_probabilities,
+    rows_summing_to_one,
+)
 from ._predictions import resolve_response as _resolve_response
 from ._validation import (
     check_labels,
@@ -194,6 +200,8 @@ def _fit_predict_fold(
     except ValueError as exc:
         raise FoldScoringError(str(exc), fold) from exc
     out = np.asarray(raw, dtype=float)
+    check_model_columns(out, response, len(model.classes_), len(test),
+                        f"A fold model ({type(model).__name__})", "held-out rows")
     out = rows_summing_to_one(out, response, f"A fold model ({type(model).__name__})")
     return np.asarray(model.classes_), out, (model if keep else None)
 
@@ -695,6 +703,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             # the labels wait as one-byte (or two-byte) codes while the model predicts
             y_index = y_index.astype(np.min_scalar_type(est_classes.shape[0] - 1))
             values = _predict_in_chunks(getattr(estimator, response), X)
+            check_model_columns(np.asarray(values), response, est_classes.shape[0], n,
+                                f"The frozen model ({type(estimator).__name__})", "`X`")
             values = rows_summing_to_one(values, response,
                                          f"The frozen model ({type(estimator).__name__})")
             # every row is in no fold: a read-only view of one value, not n of them
@@ -752,6 +762,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                 )
             try:
                 values = self._cross_fit(X, y_arr, splits, est_params, response, classes)
+            except ModelOutputError:
+                raise
             except FoldScoringError as exc:
                 raise ValueError(self._fold_scoring_failure(X, splits, response, exc)) from exc
             except ValueError as exc:  # (numpy's LinAlgError is a ValueError)
@@ -1175,6 +1187,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
     def _inner_output(self, X: Any, response: str) -> np.ndarray:
         check_fitted(self, "estimator_")
         out = np.asarray(getattr(self.estimator_, response)(X), dtype=float)
+        check_model_columns(out, response, len(self.estimator_.classes_), row_count(X),
+                            f"The wrapped estimator ({type(self.estimator_).__name__})", "`X`")
         if not np.all(np.isfinite(out)):
             raise ValueError(
                 f"The wrapped estimator returned NaN or infinite values from {response} for `X`."

@@ -14,8 +14,9 @@ import numpy as np
 
 from ._validation import counted_rows, plain, row_sum
 
-__all__ = ["HeldOutPredictions", "check_model_probabilities", "resolve_response",
-           "rows_summing_to_one", "ROUNDING_SUM_LIMIT"]
+__all__ = ["HeldOutPredictions", "ModelOutputError", "check_model_columns",
+           "check_model_probabilities", "resolve_response", "rows_summing_to_one",
+           "ROUNDING_SUM_LIMIT"]
 
 _RESPONSES = ("predict_proba", "decision_function", "auto")
 
@@ -124,6 +125,52 @@ def check_model_probabilities(values: np.ndarray, response: str, who: str, rows:
             "probabilities must lie in [0, 1]. Wrap a model whose predict_proba returns "
             "probabilities (scores of any range belong in decision_function)."
         )
+
+
+class ModelOutputError(ValueError):
+    """The wrapped model's ``predict_proba`` or ``decision_function`` output has the wrong
+    shape for its classes (raised as it is, not re-worded as a failure to fit)."""
+
+
+def check_model_columns(values: np.ndarray, response: str, n_classes: int, n_rows: int | None,
+                        who: str, rows: str) -> None:
+    """Refuse model output whose shape does not match the model's classes and the rows.
+
+    ``predict_proba`` must give one column per class, shape (n, k); ``decision_function`` of a
+    two-class model one score per row, shape (n,) (also (n, 1), or (n, 2) read as one score
+    per class) and of more classes one per class, (n, k). Without this check a model whose
+    ``predict_proba`` gives only the positive class's column stopped with a bare
+    ``IndexError`` (or "Each row of `proba` must sum to one", an argument the user never
+    passed), and a three-class ``decision_function`` of two columns with "a binary map needs
+    exactly two" labels. ``n_rows`` None skips the count of rows.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> try:
+    ...     check_model_columns(np.zeros((4, 1)), "predict_proba", 2, 4, "`estimator`", "`X`")
+    ... except ValueError as exc:
+    ...     print(str(exc)[:66])
+    `estimator` returned shape (4, 1) from predict_proba for `X`; expe
+    """
+    shape = values.shape
+    if response == "predict_proba":
+        fits = values.ndim == 2 and shape[1] == n_classes
+        expected = f"(n, {n_classes}): one column per class"
+    else:
+        allowed = (1, 2) if n_classes == 2 else (n_classes,)
+        fits = (values.ndim == 1 and n_classes == 2) or (values.ndim == 2 and shape[1] in allowed)
+        expected = ("(n,): one score per row" if n_classes == 2
+                    else f"(n, {n_classes}): one column per class")
+    if fits and (n_rows is None or shape[0] == n_rows):
+        return
+    if fits:
+        expected = f"{n_rows} rows, one per row of the input"
+    raise ModelOutputError(
+        f"{who} returned shape {shape} from {response} for {rows}; expected {expected} "
+        f"(the model has {n_classes} classes). Wrap a classifier whose {response} follows "
+        "scikit-learn's convention."
+    )
 
 
 #: a model's ``predict_proba`` rows whose sums miss one by more than 1e-6 (the tolerance of
