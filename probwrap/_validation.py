@@ -21,6 +21,7 @@ __all__ = [
     "check_binary_labels",
     "check_sample_weight",
     "check_same_length",
+    "label_column",
     "power_of_two_unit",
     "check_label_types",
     "check_target_labels",
@@ -322,6 +323,30 @@ def check_target_labels(y: np.ndarray, name: str = "y", *, object_numbers: bool 
             "which scikit-learn cannot read as class labels; pass them with a numeric dtype, "
             f"e.g. `{name}.astype(int)` or `{name}.astype(bool)`."
         )
+
+
+def label_column(y: Any, name: str = "y") -> np.ndarray:
+    """``y`` as a 1-d array of labels, a single column (n, 1) read as its values (n,).
+
+    Every wrapper and metric reads a one-column label array (a one-column DataFrame, or
+    ``y.reshape(-1, 1)``) as its column; this gives the displays and the report the same
+    reading (before, ``GroupReliabilityDisplay`` stopped with a bare ``IndexError`` and the
+    cost and decision curves and the report refused it).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> label_column(np.array([[0], [1], [1]])).tolist()
+    [0, 1, 1]
+    """
+    arr = np.asarray(y)
+    if arr.ndim == 2 and arr.shape[1] == 1:
+        arr = arr[:, 0]
+    if arr.ndim != 1:
+        raise ValueError(
+            f"`{name}` must be 1-d of shape (n,) (or one column, (n, 1)); got shape {arr.shape}."
+        )
+    return arr
 
 
 def check_labels(y: Any, *, name: str = "y", classes: Any = None, min_classes: int = 2) -> tuple[np.ndarray, np.ndarray]:

@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import plain
+from .._validation import label_column, plain
 
 __all__ = ["positive_proba", "binary_labels", "class_proba"]
 
@@ -45,9 +45,7 @@ def positive_proba(estimator: Any, X: Any, *, name: str = "estimator") -> np.nda
 
 def binary_labels(y: Any, classes: Any = None, *, name: str = "y") -> np.ndarray:
     """Labels as 0/1 floats; ``classes[1]`` (or the larger of two labels) is positive."""
-    arr = np.asarray(y)
-    if arr.ndim != 1:
-        raise ValueError(f"`{name}` must be 1-d; got shape {arr.shape}.")
+    arr = label_column(y, name)
     if classes is None:
         classes = np.unique(arr)
         if classes.shape[0] > 2:

@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import cutoff_text
+from .._validation import check_proba, cutoff_text
 from ..decision import (
     check_cost_matrix,
     cutoff_interval,
@@ -143,8 +143,9 @@ class CostCurveDisplay:
         ----------
         y_true : array-like of shape (n,)
             Binary labels.
-        y_prob : array-like of shape (n,)
-            Positive-class probabilities (held-out, so the cost is honest).
+        y_prob : array-like of shape (n,) or (n, 2)
+            Positive-class probabilities (held-out, so the cost is honest); of two columns
+            the second is used.
         costs : mapping or array-like of shape (2, 2)
             Binary costs (``{"tp", "fp", "fn", "tn"}`` or a matrix, rows true class).
         capacity : float in (0, 1], optional
@@ -168,7 +169,16 @@ class CostCurveDisplay:
             others = [v for v in np.unique(np.asarray(y_true)).tolist() if v != pos_label]
             classes = [others[0] if others else None, pos_label]
         y01 = binary_labels(y_true, classes, name="y_true").astype(np.intp)
-        p = np.asarray(y_prob, dtype=float)
+        # positive-class probabilities, or two columns (the second is used), as the metrics
+        # read them (two columns used to stop with a message about `scores`)
+        p = check_proba(y_prob, name="y_prob", column_as_1d=True)
+        if p.ndim == 2:
+            if p.shape[1] != 2:
+                raise ValueError(
+                    "`y_prob` must be 1-d positive-class probabilities (or two columns) for "
+                    f"a binary cost curve; got shape {p.shape}."
+                )
+            p = p[:, 1]
         matrix = check_cost_matrix(costs, n_classes=2, n_actions=2)
         res = search_cutoff(
             p, y01, matrix, sample_weight=sample_weight, capacity=capacity,

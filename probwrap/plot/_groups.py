@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import plain
+from .._validation import label_column, plain
 from ..metrics import expected_calibration_error, reliability_table, smooth_calibration_error
 from ..metrics._groups import MIN_EVENTS, MIN_ROWS, check_group_labels
 from ..metrics._inputs import count_scale_weights
@@ -106,7 +106,7 @@ class GroupReliabilityDisplay:
         -------
         GroupReliabilityDisplay
         """
-        y_arr = np.asarray(y_true)
+        y_arr = label_column(y_true, "y_true")
         p = np.asarray(y_prob, dtype=float)
         n = y_arr.shape[0]
         g = check_group_labels(groups, n)

@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import plain
+from .._validation import label_column, plain
 from ..plot._common import binary_labels
 
 __all__ = ["binary_truth", "binary_class_names"]
@@ -24,10 +24,10 @@ def binary_truth(y_true: Any, class_names: Any) -> tuple[np.ndarray, Any]:
     ``(negative, positive)``, by ``class_names``: which class is positive is never guessed from
     the sort order.
     """
-    arr = np.asarray(y_true)
-    found = np.unique(arr) if arr.ndim == 1 else None
-    if found is None or found.shape[0] > 2 or _is_zero_one(found):
-        return binary_labels(y_true, name="y_true"), found
+    arr = label_column(y_true, "y_true")
+    found = np.unique(arr)
+    if found.shape[0] > 2 or _is_zero_one(found):
+        return binary_labels(arr, name="y_true"), found
     shown = [str(v.item() if hasattr(v, "item") else v) for v in found]
     if class_names is not None and len(class_names) == 2 and set(shown) <= {
             str(c) for c in class_names}:

@@ -14,7 +14,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import plain
+from .._validation import label_column, plain
 from ..metrics import bootstrap_interval
 from ..metrics._bootstrap import MAX_DROPPED_SHARE
 
@@ -260,9 +260,7 @@ def as_proba_2d(values: Any, name: str) -> np.ndarray:
 
 def class_index(y: Any, classes: np.ndarray, name: str) -> np.ndarray:
     """Position of each label of ``y`` among ``classes`` (a clear error for unknown labels)."""
-    arr = np.asarray(y)
-    if arr.ndim != 1:
-        raise ValueError(f"`{name}` must be 1-d; got shape {arr.shape}.")
+    arr = label_column(y, name)
     unknown = ~np.isin(arr, classes)
     if unknown.any():
         row = int(np.flatnonzero(unknown)[0])

@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import power_of_two_unit
+from .._validation import label_column, power_of_two_unit
 from ..decision import check_cost_matrix, check_row_costs
 from ..metrics import (
     brier_score,
@@ -414,9 +414,7 @@ def general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_cos
         if not _needs_general(k, costs, row_costs, None):
             return None
         proba = as_proba_2d(y_prob, "y_prob")
-        y_arr = np.asarray(y_true)
-        if y_arr.ndim != 1:
-            raise ValueError(f"`y_true` must be 1-d; got shape {y_arr.shape}.")
+        y_arr = label_column(y_true, "y_true")
         if y_arr.shape[0] != proba.shape[0]:
             raise ValueError(f"`y_true` has {y_arr.shape[0]} rows but `y_prob` has "
                              f"{proba.shape[0]}; they must match.")
