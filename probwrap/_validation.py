@@ -22,6 +22,7 @@ __all__ = [
     "check_sample_weight",
     "check_same_length",
     "label_column",
+    "class_index_labels",
     "power_of_two_unit",
     "check_label_types",
     "check_target_labels",
@@ -157,8 +158,14 @@ def check_proba(
         # max |off| > 1e-6, without the absolute values (negation is exact)
         if off.max() > 1e-6 or off.min() < -1e-6:
             i = int(np.argmax(np.abs(off)))
+            # half precision keeps about three significant digits: its rows miss one by up to
+            # ~1e-3 however they were made
+            hint = ""
+            if getattr(proba, "dtype", None) == np.float16:
+                hint = (f" `{name}` is float16, whose rows sum to one only within about 1e-3; "
+                        "pass float64 probabilities (or divide each row by its sum).")
             raise ValueError(
-                f"Each row of `{name}` must sum to one; row {i} sums to {sums[i]:.6g}."
+                f"Each row of `{name}` must sum to one; row {i} sums to {sums[i]:.6g}.{hint}"
             )
     return arr
 
@@ -347,6 +354,43 @@ def label_column(y: Any, name: str = "y") -> np.ndarray:
             f"`{name}` must be 1-d of shape (n,) (or one column, (n, 1)); got shape {arr.shape}."
         )
     return arr
+
+
+def class_index_labels(y: Any, n_classes: int, *, name: str = "y") -> np.ndarray:
+    """Labels that are column indices ``0 .. n_classes - 1``, as intp.
+
+    Integers, booleans (False/True are 0/1) and whole-number floats (0., 1., 2.) are read as
+    indices, and a single column (n, 1) as its values, as the binary cutoff search reads 0/1
+    labels; text, fractions or indices out of range are refused, naming what was found.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> class_index_labels(np.array([True, False]), 2).tolist()
+    [1, 0]
+    >>> class_index_labels(np.array([[2.0], [0.0]]), 3).tolist()
+    [2, 0]
+    """
+    arr = label_column(y, name)
+    if arr.dtype.kind == "b":
+        arr = arr.astype(np.intp)
+    elif arr.dtype.kind == "f":
+        if not np.all(np.isfinite(arr)) or np.any(arr != np.round(arr)):
+            bad = arr[~np.isfinite(arr) | (arr != np.round(arr))][:3].tolist()
+            raise ValueError(
+                f"`{name}` must hold class indices 0 .. {n_classes - 1} (whole numbers); got "
+                f"{bad}."
+            )
+        arr = arr.astype(np.intp)
+    elif arr.dtype.kind not in "iu":
+        seen = sorted({repr(plain(v)) for v in arr[:1000].tolist()})[:5]
+        raise ValueError(
+            f"`{name}` must hold class indices 0 .. {n_classes - 1} (the columns of the "
+            f"probabilities); got labels {', '.join(seen)}. Code them as the column each "
+            "class's probability is in."
+        )
+    idx, _ = check_labels(arr, name=name, classes=np.arange(n_classes), min_classes=1)
+    return idx
 
 
 def check_labels(y: Any, *, name: str = "y", classes: Any = None, min_classes: int = 2) -> tuple[np.ndarray, np.ndarray]:

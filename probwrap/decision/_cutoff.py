@@ -19,6 +19,7 @@ from .._validation import (
     check_same_length,
     check_sample_weight,
     check_scores,
+    label_column,
     plain,
     power_of_two_unit,
 )
@@ -108,9 +109,7 @@ def _check_bounds(score_bounds: Any) -> tuple[float, float] | None:
 
 def _binary_targets(y: Any, n: int, *, small: bool = False) -> np.ndarray:
     """``y`` as 0/1 codes: intp, or (``small=True``) one-byte codes kept as they are."""
-    arr = np.asarray(y)
-    if arr.ndim != 1:
-        raise ValueError(f"`y` must be 1-d of shape (n,); got shape {arr.shape}.")
+    arr = label_column(y, "y")  # (one column (n, 1) read as its values)
     if arr.dtype.kind == "b":
         arr = arr.astype(np.int8)
     if arr.dtype.kind in "iu":  # (two reductions, no temporaries)

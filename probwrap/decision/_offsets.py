@@ -19,9 +19,9 @@ from typing import Any
 import numpy as np
 
 from .._validation import (
-    check_labels,
     check_same_length,
     check_sample_weight,
+    class_index_labels,
     plain,
     power_of_two_unit,
 )
@@ -246,11 +246,9 @@ def _sweep(p, yi, matrix, w, b, j) -> OffsetCurve:
 
 def _prepare(proba, y, costs, sample_weight):
     p = _check_proba_2d(proba)
-    n = check_same_length(("proba", p), ("y", np.asarray(y)))
-    y_arr = np.asarray(y)
-    if y_arr.dtype.kind not in "iu" or y_arr.ndim != 1:
-        raise ValueError("`y` must hold class indices 0 .. n_classes - 1 (integers).")
-    yi, _ = check_labels(y_arr, name="y", classes=np.arange(p.shape[1]), min_classes=1)
+    # integers, booleans and whole-number floats (0., 1.), or one column of them
+    yi = class_index_labels(y, p.shape[1], name="y")
+    n = check_same_length(("proba", p), ("y", yi))
     matrix = _resolve_costs(costs, n, p.shape[1])
     w = check_sample_weight(sample_weight, n)
     # The rule is unchanged when costs or weights are scaled; scaling both by powers of two
