@@ -32,6 +32,7 @@ from ._validation import (
     check_labels,
     check_sample_weight,
     check_target_labels,
+    costs_in_class_order,
     plain,
     power_of_two_unit,
 )
@@ -413,7 +414,9 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
             matrix = zero_one_costs(k)
             n_actions = k
         else:
-            matrix = check_cost_matrix(self.costs, n_classes=k)
+            # (a DataFrame's labelled rows and columns put in classes_ / actions order)
+            matrix = check_cost_matrix(
+                costs_in_class_order(self.costs, self.classes_, self.actions), n_classes=k)
             n_actions = matrix.shape[1]
         self.cost_matrix_ = matrix
         self.actions_ = self._resolve_actions(n_actions)
@@ -539,7 +542,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
             n_actions = first_block_row_costs(self, X, k, y, sample_weight).shape[2]
         else:
             matrix = zero_one_costs(k) if self.costs is None else check_cost_matrix(
-                self.costs, n_classes=k
+                costs_in_class_order(self.costs, self.classes_, self.actions), n_classes=k
             )
             n_actions = matrix.shape[1]
         self.cost_matrix_ = matrix

@@ -23,6 +23,7 @@ __all__ = [
     "check_same_length",
     "label_column",
     "class_index_labels",
+    "costs_in_class_order",
     "power_of_two_unit",
     "check_label_types",
     "check_target_labels",
@@ -391,6 +392,69 @@ def class_index_labels(y: Any, n_classes: int, *, name: str = "y") -> np.ndarray
         )
     idx, _ = check_labels(arr, name=name, classes=np.arange(n_classes), min_classes=1)
     return idx
+
+
+def _frame_labels(axis: Any) -> list | None:
+    """The labels of a pandas axis, or None for 0..n-1 in order (positions, not labels: the
+    default index, or one rebuilt as integers)."""
+    labels = [plain(v) for v in axis.tolist()]
+    if all(type(v) is int and v == i for i, v in enumerate(labels)):
+        return None
+    return labels
+
+
+def costs_in_class_order(costs: Any, classes: Any, actions: Any = None,
+                         *, name: str = "costs") -> Any:
+    """A cost matrix given as a pandas DataFrame, its rows put in ``classes`` order (and its
+    columns in the order of ``actions``, or of the classes when no actions are named) when
+    they are labelled; anything else unchanged.
+
+    The wrappers read a matrix's rows in ``classes_`` order. A DataFrame whose rows are
+    labelled with the classes in another order was read by position, silently: on
+    scikit-learn's wine data with labels ``barolo``, ``grignolino``, ``barbera`` a frame with
+    rows and columns in that order gave other decisions than the same costs as an array in
+    ``classes_`` order. Rows (columns) with the default labels 0..n-1 keep being read by
+    position; labels that are not the classes (the actions) are refused, naming both.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> frame = pd.DataFrame([[0, 1], [5, 0]], index=["spam", "ham"], columns=["spam", "ham"])
+    >>> costs_in_class_order(frame, ["ham", "spam"]).tolist()
+    [[0.0, 5.0], [1.0, 0.0]]
+    """
+    if type(costs).__name__ != "DataFrame" or not hasattr(costs, "index"):
+        return costs
+    class_list = [plain(c) for c in np.asarray(classes).tolist()]
+    rows = _frame_labels(costs.index)
+    cols = _frame_labels(costs.columns)
+    values = np.asarray(costs.to_numpy(dtype=float, na_value=np.nan))
+    if rows is not None:
+        if sorted(map(repr, rows)) != sorted(map(repr, class_list)):
+            raise ValueError(
+                f"`{name}` is a DataFrame whose rows are labelled {rows[:6]}, not the classes "
+                f"{class_list[:6]}; label its rows with the classes (in any order), or give "
+                "the rows in classes_ order with the default index 0..n-1."
+            )
+        values = values[[rows.index(c) for c in class_list]]
+    if cols is not None:
+        wanted = class_list if actions is None else [plain(a) for a in np.asarray(
+            actions, dtype=object).tolist()]
+        if sorted(map(repr, cols)) == sorted(map(repr, wanted)):
+            values = values[:, [cols.index(a) for a in wanted]]
+        elif actions is None and len(cols) == len(class_list):
+            raise ValueError(
+                f"`{name}` is a DataFrame whose columns (the actions) are labelled {cols[:6]}, "
+                f"not the classes {class_list[:6]}, and `actions` is not given, so the class "
+                f"labels would name the actions; pass actions={cols!r}, or label the columns "
+                "with the classes."
+            )
+        elif actions is not None:
+            raise ValueError(
+                f"`{name}` is a DataFrame whose columns are labelled {cols[:6]}, not the "
+                f"`actions` {wanted[:6]}; label them with the actions (in any order)."
+            )
+    return values
 
 
 def check_labels(y: Any, *, name: str = "y", classes: Any = None, min_classes: int = 2) -> tuple[np.ndarray, np.ndarray]:
