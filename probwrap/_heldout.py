@@ -39,6 +39,8 @@ from ._predictions import (
     ModelOutputError,
     check_model_columns,
     check_model_probabilities,
+    rounding_message,
+    rounding_rows,
     rows_summing_to_one,
 )
 from ._predictions import resolve_response as _resolve_response
@@ -202,8 +204,9 @@ def _fit_predict_fold(
     out = np.asarray(raw, dtype=float)
     check_model_columns(out, response, len(model.classes_), len(test),
                         f"A fold model ({type(model).__name__})", "held-out rows")
-    out = rows_summing_to_one(out, response, f"A fold model ({type(model).__name__})")
-    return np.asarray(model.classes_), out, (model if keep else None)
+    # rows off by rounding divided by their sums; the caller warns once for all the folds
+    out, n_bad, worst = rounding_rows(out, response)
+    return np.asarray(model.classes_), out, (model if keep else None), (n_bad, worst)
 
 
 def _is_missing(value: Any) -> bool:
@@ -1170,11 +1173,22 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                                        keep, i)
             for i, ((train, test), params) in enumerate(zip(splits, fold_params, strict=True))
         )
+        # rows divided by their sums: one warning for all the folds (it was one per fold, five
+        # alike in one fit of a model with float16 output; and none from parallel workers)
+        rounded = [info for *_, info in results if info[0]]
+        if rounded:
+            warnings.warn(
+                rounding_message(f"Fold models ({type(self.estimator).__name__})",
+                                 sum(k for k, _ in rounded), max(w for _, w in rounded),
+                                 f" in {len(rounded)} of {len(results)} folds"),
+                UserWarning,
+                stacklevel=5,
+            )
         # the fold models, for a wrapper that scores new rows with them too (PriorShiftWrapper)
-        self._fold_models = [(model, fold_classes) for fold_classes, _, model in results] \
+        self._fold_models = [(model, fold_classes) for fold_classes, _, model, _ in results] \
             if keep else None
         return [fold_columns(fold_classes, out, classes, response)
-                for fold_classes, out, _ in results]
+                for fold_classes, out, _, _ in results]
 
     # -- prediction helpers ----------------------------------------------------------------
     def _dask_predict(self, method: Any, X: Any, n_columns: int | None, dtype: Any = float):

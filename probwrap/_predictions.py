@@ -16,7 +16,7 @@ from ._validation import counted_rows, plain, row_sum
 
 __all__ = ["HeldOutPredictions", "ModelOutputError", "check_model_columns",
            "check_model_probabilities", "resolve_response", "rows_summing_to_one",
-           "ROUNDING_SUM_LIMIT"]
+           "rounding_rows", "rounding_message", "ROUNDING_SUM_LIMIT"]
 
 _RESPONSES = ("predict_proba", "decision_function", "auto")
 
@@ -207,8 +207,28 @@ def rows_summing_to_one(values: np.ndarray, response: str, who: str) -> np.ndarr
     >>> out.sum(axis=1).round(12).tolist()
     [1.0, 1.0]
     """
+    out, n_bad, worst = rounding_rows(values, response)
+    if n_bad:
+        warnings.warn(rounding_message(who, n_bad, worst), UserWarning, stacklevel=4)
+    return out
+
+
+def rounding_message(who: str, n_bad: int, worst: float, where: str = "") -> str:
+    """The warning of :func:`rows_summing_to_one` (``where``: e.g. " in 5 of 5 folds")."""
+    return (
+        f"{who}'s predict_proba returned {n_bad} row(s){where} whose probabilities sum to "
+        f"one only within {worst:.2g} (the model's rounding; e.g. GaussianNB where a column "
+        "was constant among its training rows, or float16 output); those rows were divided "
+        "by their sums."
+    )
+
+
+def rounding_rows(values: np.ndarray, response: str) -> tuple[np.ndarray, int, float]:
+    """:func:`rows_summing_to_one` without the warning: ``(out, rows divided, largest miss)``
+    (``values`` itself and ``(values, 0, 0.0)`` when no row is divided), for a caller that
+    warns once for several calls (the fold models of one fit)."""
     if response != "predict_proba" or values.ndim != 2 or values.size == 0:
-        return values
+        return values, 0, 0.0
     # the largest miss, block by block: no temporaries as long as the rows (a tuned fit on
     # 10^6 rows peaked here, at 5.1 times the scores, with whole-column sums and misses)
     worst = 0.0
@@ -217,19 +237,12 @@ def rows_summing_to_one(values: np.ndarray, response: str, who: str) -> np.ndarr
         miss -= 1.0
         block_worst = float(np.abs(miss, out=miss).max())
         if np.isnan(block_worst):
-            return values  # (NaN: left for the checks)
+            return values, 0, 0.0  # (NaN: left for the checks)
         worst = max(worst, block_worst)
     if not (1e-6 < worst <= ROUNDING_SUM_LIMIT):
-        return values
+        return values, 0, 0.0
     sums = row_sum(values)
     bad = np.abs(sums - 1.0) > 1e-6
-    warnings.warn(
-        f"{who}'s predict_proba returned {int(bad.sum())} row(s) whose probabilities sum to "
-        f"one only within {worst:.2g} (the model's rounding; e.g. GaussianNB where a column was "
-        "constant among its training rows); those rows were divided by their sums.",
-        UserWarning,
-        stacklevel=4,
-    )
     out = values.copy()
     out[bad] = out[bad] / sums[bad, None]
-    return out
+    return out, int(bad.sum()), worst

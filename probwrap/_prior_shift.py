@@ -1381,13 +1381,26 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         models = getattr(self, "_fold_models", None)
         if not models or getattr(self.prior_estimator_, "_src_fold", None) is None:
             return None
-        from ._heldout import fold_columns
-        from ._predictions import rows_summing_to_one
+        from ._heldout import fold_columns, row_count
+        from ._predictions import check_model_columns, rounding_message, rounding_rows
 
-        return [fold_columns(np.asarray(classes), rows_summing_to_one(
-            np.asarray(model.predict_proba(X), dtype=float), "predict_proba",
-            f"A fold model ({type(model).__name__})"), self.classes_, "predict_proba")
-            for model, classes in models]
+        out, rounded = [], []
+        for model, classes in models:
+            values = np.asarray(model.predict_proba(X), dtype=float)
+            check_model_columns(values, "predict_proba", len(classes), row_count(X),
+                                f"A fold model ({type(model).__name__})", "`X`")
+            values, n_bad, worst = rounding_rows(values, "predict_proba")
+            if n_bad:
+                rounded.append((n_bad, worst))
+            out.append(fold_columns(np.asarray(classes), values, self.classes_, "predict_proba"))
+        if rounded:  # once for all the fold models (it was once per fold model)
+            warnings.warn(rounding_message(
+                f"Fold models ({type(models[0][0]).__name__})", sum(k for k, _ in rounded),
+                max(w for _, w in rounded),
+                f" (counted over {len(rounded)} of the {len(models)} fold models, each scoring "
+                "every row)"),
+                UserWarning, stacklevel=3)
+        return out
 
     def _fold_scorer(self) -> Any:
         """The refit model and its fold models, to score Dask or Spark rows where they live
