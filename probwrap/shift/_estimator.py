@@ -122,6 +122,27 @@ def _kish(w: np.ndarray) -> float:
     return float(w.sum() ** 2 / np.dot(w, w))
 
 
+def _count_table_hint(w: np.ndarray, n_units: float) -> str:
+    """The end of the few-rows warning where the unlabelled weights look like a table of
+    counts (whole numbers, some above 1, summing to more than twice the rows counted): they
+    are read as relative weights, so the table's cases do not count as rows. Found on count
+    tables (vcd CoalMiners, datasets esoph, HairEyeColor; benchmarks/shift_real_hunt27.py):
+    1,000 cases on 8 to 16 cells counted as about 6 rows, the interval spanned [0, 1] and the
+    warning advised larger batches, while the cases as rows detected the shift."""
+    w = np.asarray(w, dtype=float)
+    if not w.size or not np.all(w == np.round(w)) or not float(w.max()) > 1.0:
+        return ""
+    total = float(w.sum())
+    if not total > 2.0 * n_units:
+        return ""
+    return (
+        f" The weights are whole numbers summing to {total:.6g}: adapt reads them as relative "
+        "weights (only their ratios count), not as counts of cases. If each row stands for "
+        "that many independent cases (a table of counts), pass one row per case "
+        "(np.repeat of the rows by their counts) instead."
+    )
+
+
 class PriorEstimator(_Resampling):
     """Estimate the class priors of unlabelled rows from labelled held-out posteriors.
 
@@ -694,7 +715,8 @@ class PriorEstimator(_Resampling):
                 f"Only {n_units:.3g} effective unlabelled rows"
                 + ("" if cell_t is None else " (Kish's count over the cells' design effect)")
                 + "; the prior estimate is very uncertain and its interval is wide: read "
-                "the interval, not the estimate, or pass more rows (larger batches).",
+                "the interval, not the estimate, or pass more rows (larger batches)."
+                + _count_table_hint(w, n_units),
                 UserWarning,
                 stacklevel=2,
             )
