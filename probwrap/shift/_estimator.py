@@ -136,7 +136,7 @@ def _count_table_hint(w: np.ndarray, n_units: float) -> str:
     counts (whole numbers, some above 1, summing to more than twice the rows counted): they
     are read as relative weights, so the table's cases do not count as rows. Found on count
     tables (vcd CoalMiners, datasets esoph, HairEyeColor; benchmarks/shift_real_hunt27.py):
-    1,000 cases on 8 to 16 cells counted as about 6 rows, the interval spanned [0, 1] and the
+    1,000 cases on 8 to 18 cells counted as 6 to 13 rows, the interval spanned [0, 1] and the
     warning advised larger batches, while the cases as rows detected the shift."""
     w = np.asarray(w, dtype=float)
     if not w.size or not np.all(w == np.round(w)) or not float(w.max()) > 1.0:
