@@ -44,7 +44,8 @@ closed, coverage, the weight-scale twins, per set), then the count-table cells.
 
 Run: nice python benchmarks/shift_real_hunt27.py [--seeds 2] [--sets NAME ...] [--out FILE.csv]
      nice python benchmarks/shift_real_hunt27.py --quick   (seed 0, 150 labelled rows, logistic
-                                                           regression and naive Bayes)
+                                                           regression and naive Bayes: 300
+                                                           row and 60 count cells, 184 s)
      nice python benchmarks/shift_real_hunt27.py --summary FILE.csv [--count-summary FILE2.csv]
 Results: docs/prior_shift.md, "Session-27 hunt".
 """
