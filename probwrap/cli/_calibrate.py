@@ -421,8 +421,15 @@ def _apply(args: argparse.Namespace) -> int:
         out = np.full(scores.shape[0], np.nan)
         out[np.isfinite(scores)] = given
         dialect = frame.attrs.get("csv_dialect")
+        written = frame.attrs.get("csv_header")
         frame = frame.copy()
         frame.attrs.clear()
+        if written is not None and len(written) == frame.shape[1]:
+            # empty header cells stay empty (they were written back as "Unnamed: 0", which
+            # changed the header of a file replaced in place)
+            frame.columns = [name if not str(name).strip() and str(column).startswith("Unnamed: ")
+                             else column for name, column in zip(written, frame.columns,
+                                                                 strict=True)]
         if not is_numeric_dtype(frame[args.score_column].dtype):
             # a CSV column read as text: written as the numbers it holds (with the decimal
             # mark of the file it came from; a missing score as an empty field);
@@ -487,7 +494,7 @@ def register(subparsers: Any) -> None:
 
     def run_fit(args: argparse.Namespace) -> int:
         check_out_suffix(fit, args.out, (".json",), stdout="the map")
-        check_writable(args.out)
+        check_writable(args.out, inputs={"--scores": args.scores})
         return _fit(args)
 
     fit.set_defaults(func=run_fit, _fit_parser=fit)
@@ -530,7 +537,9 @@ def register(subparsers: Any) -> None:
             args.out = None  # standard output: CSV
         else:
             check_out_suffix(apply, args.out, TABLE_SUFFIXES)
-            check_writable(args.out)
+            # --scores may be replaced (the table with its added column: documented); the
+            # map may not
+            check_writable(args.out, inputs={"--map": args.map})
         return _apply(args)
 
     apply.set_defaults(func=run_apply)

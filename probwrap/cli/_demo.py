@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import argparse
+import contextlib
 import time
+import warnings
 from pathlib import Path
 from typing import Any
 
@@ -296,11 +298,26 @@ def share_lines(c: Any, true_shares: Any) -> list[str]:
     return lines
 
 
+@contextlib.contextmanager
+def _demo_warnings() -> Any:
+    """Library warnings met while the demo runs, each printed once as a
+    ``probwrap demo: warning:`` line (as the other verbs print theirs), not as Python's
+    ``file.py:45: UserWarning:`` display with a source line."""
+    from ._calibrate import report_warnings
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            yield
+        finally:
+            report_warnings("demo", caught)
+
+
 def _three_way_handler(args: argparse.Namespace) -> int:
     _refuse_standard_output(args)
     start = time.perf_counter()
     check_writable(args.out, folder=True)
-    with Stages("demo", DEMO_STEPS["three-way"]) as stages:
+    with Stages("demo", DEMO_STEPS["three-way"]) as stages, _demo_warnings():
         result = run_three_way_demo(args.out, n_train=args.n_train, seed=args.seed,
                                     stages=stages)
     c = result["content"]
@@ -363,7 +380,7 @@ def _handler(args: argparse.Namespace) -> int:
     _refuse_standard_output(args)
     start = time.perf_counter()
     check_writable(args.out, folder=True)
-    with Stages("demo", DEMO_STEPS["damage"]) as stages:
+    with Stages("demo", DEMO_STEPS["damage"]) as stages, _demo_warnings():
         result = run_demo(args.out, n_train=args.n_train, seed=args.seed, stages=stages)
     c = result["content"]
     rules = result["rules"]

@@ -81,13 +81,28 @@ def _prepare_folder(path: Path) -> None:
         raise DataError(_no_folder(path, path.parent, exc)) from None
 
 
-def check_writable(path: str | Path, *, folder: bool = False) -> None:
+def check_writable(path: str | Path, *, folder: bool = False,
+                   inputs: dict[str, Any] | None = None) -> None:
     """Fail early (before any long computation) when ``path`` cannot be written.
 
     ``folder=True``: ``path`` is a folder to write into (created when missing).
+    ``inputs``: the files the command reads, by flag (``{"--scores": path}``); an output that
+    is one of them (the same name, a link to it, another path to it) is refused, since writing
+    it would replace what was read.
     """
     if to_stdout(path):
         return
+    for flag, given in (inputs or {}).items():
+        if given is None or to_stdout(given) or not isinstance(given, (str, os.PathLike)):
+            continue
+        try:
+            same = os.path.samefile(path, given)
+        except OSError:  # one of them does not exist (yet), or cannot be looked at
+            same = False
+        if same:
+            raise DataError(
+                f"{path}: is also the input file {flag}; writing it would replace the file "
+                "being read: give --out another file name")
     path = Path(path)
     if path.is_symlink():  # written through (see write_atomic): check the linked file's folder
         path = Path(os.path.realpath(path))

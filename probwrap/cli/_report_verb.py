@@ -151,7 +151,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 
 def _probabilities(frame, column: str, path: str, flag: str) -> np.ndarray:
-    return probability_column(frame, column, path, flag=flag)
+    return probability_column(frame, column, path, flag=flag, log_odds=False)
 
 
 def _split(text: str) -> list[str]:
@@ -274,7 +274,7 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
     if args.capacity is not None and not 0 < args.capacity <= 1:
         parser.error(f"--capacity must be a share in (0, 1]; got {args.capacity:g}"
                      f"{percent_hint(args.capacity)}")
-    check_writable(args.out)
+    check_writable(args.out, inputs={"--scores": args.scores, "--unlabelled": args.unlabelled})
     matrix = None if args.cost_matrix is None else _cost_matrix(args.cost_matrix, parser)
     if matrix is not None and matrix.shape[0] != len(columns):
         parser.error(f"--cost-matrix has {matrix.shape[0]} rows but --class-columns names "
@@ -656,7 +656,7 @@ def _handler(args: argparse.Namespace) -> int:
     guarantee = guarantee_args(args, parser)
     late_columns = late_label_columns(args, parser)
 
-    check_writable(args.out)
+    check_writable(args.out, inputs={"--scores": args.scores, "--unlabelled": args.unlabelled})
     costs = None
     if given:
         costs = {"fp": args.cost_fp, "fn": args.cost_fn, "tp": args.cost_tp,

@@ -28,6 +28,7 @@ from ._common import (
     one_line,
     require,
     row_number,
+    rows_text,
     shown,
     table_kind,
     warn_line,
@@ -130,6 +131,10 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
             # the file cannot settle: _settle_dots)
             frame.attrs["csv_read"] = (sep, decimal)
             header = _csv_header(path, encoding, sep)
+            if as_text and header is not None:
+                # the names as written: an empty header cell (an index column a script wrote
+                # out) is written back empty, not as pandas' "Unnamed: 0"
+                frame.attrs["csv_header"] = list(header)
             if header is not None and len(header) == 1:
                 frame = _blank_lines_as_missing(pd, frame, path, encoding, sep)
     except DataError:
@@ -407,14 +412,24 @@ def _open_text(path: Path, encoding: str, errors: str = "strict") -> Any:
 
 
 def _csv_encoding(path: Path) -> str:
-    """UTF-16 when the file starts with a UTF-16 byte-order mark (spreadsheets' "Unicode text"),
-    UTF-8 otherwise (a UTF-8 byte-order mark is skipped)."""
+    """UTF-16 when the file starts with a UTF-16 byte-order mark (spreadsheets' "Unicode text")
+    or, without one, with two ASCII characters each followed (little-endian) or preceded
+    (big-endian) by a zero byte; UTF-8 otherwise (a UTF-8 byte-order mark is skipped)."""
     try:
         with _open_bytes(path) as handle:
-            start = handle.read(2)
+            start = handle.read(4)
     except _UNREADABLE:
         return "utf-8-sig"
-    return "utf-16" if start in (b"\xff\xfe", b"\xfe\xff") else "utf-8-sig"
+    if start[:2] in (b"\xff\xfe", b"\xfe\xff"):
+        return "utf-16"
+    # UTF-16 without a byte-order mark (some database and script exports): a header of
+    # ASCII letters shows every other byte zero; UTF-8 text holds no zero byte there (it was
+    # read as one column named after the first letter, 's', and 'Unnamed: 1', ...)
+    if len(start) == 4 and start[1] == start[3] == 0 and start[0] and start[2]:
+        return "utf-16-le"
+    if len(start) == 4 and start[0] == start[2] == 0 and start[1] and start[3]:
+        return "utf-16-be"
+    return "utf-8-sig"
 
 
 def _starts_with_bom(path: Path) -> bool:
@@ -497,7 +512,8 @@ def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
     """Separator and decimal mark of a CSV file.
 
     Comma-separated unless the header has no comma but a semicolon or a tab (spreadsheets in
-    many European locales write ``;`` with decimal commas), or as a first ``sep=X`` line says.
+    many European locales write ``;`` with decimal commas) or, with none of these, a ``|``
+    (database exports), or as a first ``sep=X`` line says.
     With ``;`` or a tab the decimal mark is a comma when any field of the file is a number written with one (``0,42``, ``4,757E-02``):
     the whole file is looked at, since a sorted file may start with many rows of whole numbers.
     """
@@ -518,6 +534,10 @@ def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
                     sep = "\t"
                 elif ";" in header:
                     sep = ";"
+                elif "|" in header:
+                    # database and mainframe exports separate by '|' (read as one column
+                    # named 'score|y|w' before); no decimal commas are looked for there
+                    return "|", "."
                 else:
                     return ",", "."
             while True:
@@ -622,7 +642,8 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
         hint = infinite_hint if np.isinf(values[row]) else ""
         what = ("the value is missing" + missing_count_text(path, series.isna().to_numpy())
                 if pd.isna(raw_value) else
-                f"{shown(raw_value)} is not a finite number{hint or _number_hint(raw_value)}")
+                f"{shown(raw_value)} is not a finite number{hint or _number_hint(raw_value)}"
+                f"{_marker_hint(series, raw_value, path)}")
         raise DataError(f"{_row(path, column, row)}: {what}{_last_row_hint(bad)}")
     if grouped:
         _warn_grouped(path, column, flag, *grouped, values[grouped[1]])
@@ -810,6 +831,24 @@ def _warn_grouped(path: str | Path, column: str, flag: str, count: int, first: i
 _COMMA_NUMBER = re.compile(r"[-+]?[\d.]*\d,[\d.,]*\d(?:[eE][-+]?\d+)?")
 
 
+#: what some exports write for a missing value that pandas does not read as missing ("?" in the
+#: UCI files, "-" and "." in printed tables and SAS, spreadsheets' error values)
+MISSING_MARKS = frozenset({"?", "-", "--", ".", "missing", "unknown", "#VALUE!", "#DIV/0!",
+                           "#NUM!", "#REF!"})
+
+
+def _marker_hint(series: Any, value: Any, path: str | Path) -> str:
+    """After "'?' is not a finite number": how many rows hold that missing-value mark and which,
+    and how to write a missing value so that it is read as one; "" for other values."""
+    text = str(value).strip()
+    if text not in MISSING_MARKS:
+        return ""
+    rows = np.flatnonzero(series.astype(str).str.strip().to_numpy() == text)
+    return (f"; {rows.shape[0]} of {series.shape[0]} rows hold {shown(text)}: "
+            f"{rows_text(path, rows)}; if it marks a missing value, fill those rows in or "
+            "remove them (an empty field or NA is read as missing)")
+
+
 def _number_hint(value: Any) -> str:
     """Why a field that looks like a number was not read as one, or ""."""
     text = str(value).strip().strip('"').strip()
@@ -825,9 +864,11 @@ def _number_hint(value: Any) -> str:
 
 
 def probability_column(frame: Any, column: str, path: str | Path, *, flag: str,
-                       allow_missing: bool = False) -> np.ndarray:
+                       allow_missing: bool = False, log_odds: bool = True) -> np.ndarray:
     """A column of probabilities in [0, 1], or a DataError naming the first bad row
-    (``allow_missing``: missing values are NaN, as for :func:`numeric_column`)."""
+    (``allow_missing``: missing values are NaN, as for :func:`numeric_column`;
+    ``log_odds=False``: the option takes probabilities only, so ``--scale log-odds`` is not
+    offered)."""
     values = numeric_column(frame, column, path, flag=flag, allow_missing=allow_missing)
     with np.errstate(invalid="ignore"):
         bad = (values < 0.0) | (values > 1.0)
@@ -848,6 +889,11 @@ def probability_column(frame: Any, column: str, path: str | Path, *, flag: str,
                     "probability); for log-odds scores use --scale log-odds")
         else:
             hint = "use --scale log-odds for log-odds scores"
+        if not log_odds:  # --class-columns: probabilities only (--scale log-odds is refused)
+            hint = (hint.replace("; for log-odds scores use --scale log-odds", "")
+                    .replace("use --scale log-odds for log-odds scores",
+                             f"{flag} take probabilities; log-odds are read for one "
+                             "binary score column only"))
         raise DataError(
             f"{_row(path, column, row)}: {shown(values[row])} is not a probability in [0, 1] "
             f"({hint}){_last_row_hint(bad)}"
@@ -914,6 +960,14 @@ def read_labels(
         hint = ("; some differ only in spaces around them or in case, and are read as "
                 "different labels: write each label one way") if (
             distinct.shape[0] > 2 and len(tidy) < distinct.shape[0]) else ""
+        marks = [v for v in distinct if str(v).strip() in MISSING_MARKS]
+        if distinct.shape[0] > 2 and marks and not hint:
+            # "?" for an unknown outcome (UCI files): read as a third label, with no row named
+            flagged = np.isin(values.astype(str), [str(v) for v in marks])
+            hint = (f"; {', '.join(shown(v) for v in marks)} in {int(flagged.sum())} of "
+                    f"{values.shape[0]} rows ({rows_text(path, np.flatnonzero(flagged))}) looks "
+                    "like a mark for a missing label: rows without a label cannot be used here, "
+                    "remove them")
         if distinct.shape[0] == 3 and not hint:  # a label found only on the last row
             if _last_row_hint(values == values[-1]):
                 hint = (f"; {shown(values[-1])} is found only on the last row of the table: if "
@@ -924,8 +978,8 @@ def read_labels(
                 f"outcome); it holds one label only, {shown_labels}, in all {values.shape[0]} "
                 "rows: both classes are needed (rows with and without the outcome)")
         raise DataError(
-            f"{path}: column {shown(column)} must hold exactly two labels (binary outcome); it "
-            f"holds {distinct.shape[0]}: {shown_labels}{more}{hint}"
+            f"{path}: column {shown(column)} ({flag}) must hold exactly two labels (binary "
+            f"outcome); it holds {distinct.shape[0]}: {shown_labels}{more}{hint}"
         )
     numbers = [_number(v) for v in distinct]
     zero_one = sorted(n for n in numbers if n is not None) == [0.0, 1.0]

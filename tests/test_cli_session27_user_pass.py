@@ -1,0 +1,192 @@
+"""The command line as a new user meets it: the session-27 pass over ugly files.
+
+Data: scikit-learn's breast cancer (a scaled logistic regression fitted on 280 rows, held-out
+probabilities of the other 289 written to CSV) and wine (three classes, for ``report
+--class-columns``). Every test here failed on the code before this session (see
+docs/command_line.md, "Session-27 user pass").
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+from sklearn.datasets import load_breast_cancer, load_wine
+from sklearn.linear_model import LogisticRegression
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+
+from probwrap.cli import main
+
+
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    import probwrap.cli._progress as progress
+
+    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+
+
+@pytest.fixture(scope="module")
+def cancer():
+    X, y = load_breast_cancer(return_X_y=True)
+    order = np.random.default_rng(0).permutation(y.size)
+    fit, held = order[:280], order[280:]
+    model = make_pipeline(StandardScaler(), LogisticRegression(C=0.1)).fit(X[fit], y[fit])
+    return pd.DataFrame({"score": np.round(model.predict_proba(X[held])[:, 1], 6),
+                         "y": y[held]})
+
+
+def run(capsys, *argv):
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def _cutoff(capsys, path):
+    code, out, err = run(capsys, "cutoff", "--scores", path, "--score-column", "score",
+                         "--label-column", "y", "--cost-fp", 1, "--cost-fn", 5, "--resamples",
+                         0, "--format", "json")
+    assert code == 0, err
+    return json.loads(out)
+
+
+@pytest.mark.parametrize("encoding", ["utf-16-le", "utf-16-be"])
+def test_utf16_without_byte_order_mark_read_as_the_plain_file(cancer, tmp_path, capsys,
+                                                              encoding):
+    """Read as one column named 's' and 'Unnamed: 1', ... ("no column 'score'") before."""
+    plain = tmp_path / "plain.csv"
+    cancer.to_csv(plain, index=False)
+    other = tmp_path / "wide.csv"
+    other.write_text(cancer.to_csv(index=False), encoding=encoding)
+    assert other.read_bytes()[:2] != b"\xff\xfe"  # no byte-order mark
+    want, got = _cutoff(capsys, plain), _cutoff(capsys, other)
+    assert (got["n_rows"], got["n_positive"], got["cutoff"]) == (
+        want["n_rows"], want["n_positive"], want["cutoff"]) == (289, 181, want["cutoff"])
+
+
+def test_pipe_separated_file_read_and_written_back(cancer, tmp_path, capsys):
+    """A '|'-separated export was one column named 'score|y' ("no column 'score'")."""
+    plain = tmp_path / "plain.csv"
+    cancer.to_csv(plain, index=False)
+    piped = tmp_path / "piped.csv"
+    cancer.to_csv(piped, index=False, sep="|")
+    want, got = _cutoff(capsys, plain), _cutoff(capsys, piped)
+    assert (got["n_rows"], got["cutoff"]) == (want["n_rows"], want["cutoff"])
+    mapped = tmp_path / "map.json"
+    assert run(capsys, "calibrate", "fit", "--scores", piped, "--score-column", "score",
+               "--label-column", "y", "--method", "platt", "--out", mapped)[0] == 0
+    out = tmp_path / "out.csv"
+    assert run(capsys, "calibrate", "apply", "--map", mapped, "--scores", piped,
+               "--score-column", "score", "--out", out)[0] == 0
+    assert out.read_text().splitlines()[0] == "score|y|calibrated_probability"
+
+
+def test_apply_keeps_an_empty_header_cell(cancer, tmp_path, capsys):
+    """A file written with its index (``to_csv()``: the header starts with ','): the output's
+    header read 'Unnamed: 0,score,...', so replacing the file in place renamed a column."""
+    path = tmp_path / "indexed.csv"
+    cancer.to_csv(path)  # index column with an empty name
+    mapped = tmp_path / "map.json"
+    assert run(capsys, "calibrate", "fit", "--scores", path, "--score-column", "score",
+               "--label-column", "y", "--method", "platt", "--out", mapped)[0] == 0
+    before = path.read_text().splitlines()
+    code, _, err = run(capsys, "calibrate", "apply", "--map", mapped, "--scores", path,
+                       "--score-column", "score", "--out", path)
+    assert code == 0, err
+    after = path.read_text().splitlines()
+    assert after[0] == before[0] + ",calibrated_probability" == ",score,y,calibrated_probability"
+    assert [line.rsplit(",", 1)[0] for line in after[1:]] == before[1:]
+
+
+def test_report_refuses_to_write_over_an_input_file(cancer, tmp_path, capsys):
+    """``--out`` naming the score file (or a link to the unlabelled file) replaced it with the
+    page: the labelled rows were gone."""
+    scores = tmp_path / "scores.html"  # a CSV file with a misleading name
+    cancer.to_csv(scores, index=False)
+    before = scores.read_bytes()
+    code, _, err = run(capsys, "report", "--scores", scores, "--score-column", "score",
+                       "--label-column", "y", "--cost-fp", 1, "--cost-fn", 5, "--resamples",
+                       10, "--out", scores)
+    assert code == 1
+    assert "is also the input file --scores" in err and "give --out another file name" in err
+    assert scores.read_bytes() == before
+    plain = tmp_path / "plain.csv"
+    cancer.to_csv(plain, index=False)
+    link = tmp_path / "page.html"
+    link.symlink_to(scores)
+    code, _, err = run(capsys, "report", "--scores", plain, "--unlabelled", scores,
+                       "--score-column", "score", "--label-column", "y", "--cost-fp", 1,
+                       "--cost-fn", 5, "--resamples", 10, "--out", link)
+    assert code == 1 and "is also the input file --unlabelled" in err
+    assert scores.read_bytes() == before
+
+
+def test_question_marks_for_missing_scores_and_labels_are_counted(cancer, tmp_path, capsys):
+    """'?' (UCI files' missing value) was "'?' is not a finite number" for the first row only,
+    and as a label "it holds 3: '1', '?', '0'" with no row named."""
+    frame = cancer.astype(str)
+    frame.loc[[5, 9, 40], "score"] = "?"
+    path = tmp_path / "q.csv"
+    frame.to_csv(path, index=False)
+    code, _, err = run(capsys, "cutoff", "--scores", path, "--score-column", "score",
+                       "--label-column", "y", "--cost-fp", 1, "--cost-fn", 5)
+    assert code == 1
+    assert "3 of 289 rows hold '?': rows 7, 11 and 42" in err
+    assert "if it marks a missing value" in err
+    frame = cancer.astype(str)
+    frame.loc[[5, 9], "y"] = "?"
+    frame.to_csv(path, index=False)
+    code, _, err = run(capsys, "calibrate", "fit", "--scores", path, "--score-column", "score",
+                       "--label-column", "y", "--out", tmp_path / "m.json")
+    assert code == 1
+    assert "(--label-column) must hold exactly two labels" in err
+    assert "'?' in 2 of 289 rows (rows 7 and 11" in err and "missing label" in err
+
+
+def test_class_columns_in_percent_do_not_offer_log_odds(tmp_path, capsys):
+    """The percentage message said "for log-odds scores use --scale log-odds", which
+    ``--class-columns`` refuses."""
+    X, y = load_wine(return_X_y=True)
+    model = make_pipeline(StandardScaler(), LogisticRegression(C=0.1)).fit(X[::2], y[::2])
+    names = ["barolo", "grignolino", "barbera"]
+    frame = pd.DataFrame(np.round(model.predict_proba(X[1::2]) * 100, 2), columns=names)
+    frame["cls"] = [names[k] for k in y[1::2]]
+    path = tmp_path / "wine.csv"
+    frame.to_csv(path, index=False)
+    code, _, err = run(capsys, "report", "--scores", path, "--class-columns", ",".join(names),
+                       "--label-column", "cls", "--cost-matrix", "0,4,12;20,4,12;60,64,12",
+                       "--out", tmp_path / "r.html")
+    assert code == 1
+    assert "look like percentages: divide them by 100" in err
+    assert "--scale log-odds" not in err
+
+
+@pytest.mark.slow
+def test_demo_prints_library_warnings_as_its_own_lines(tmp_path, capsys):
+    """With few training parcels the report's warnings came out as Python's display
+    ('.../report/__init__.py:45: UserWarning:' and a source line)."""
+    with _no_warning_escapes():
+        code, out, err = run(capsys, "demo", "--out", tmp_path / "d", "--n-train", 500)
+    assert code == 0
+    assert "probwrap demo: warning: report, prevalence alarm:" in err
+    assert "UserWarning" not in err
+
+
+class _no_warning_escapes:
+    """No warning leaves the command (Python would print it with its source line)."""
+
+    def __enter__(self):
+        import warnings
+
+        self._catch = warnings.catch_warnings(record=True)
+        self.caught = self._catch.__enter__()
+        warnings.simplefilter("always")
+        return self
+
+    def __exit__(self, *exc):
+        self._catch.__exit__(*exc)
+        escaped = [str(w.message)[:80] for w in self.caught]
+        assert not escaped, escaped
+        return False
