@@ -190,3 +190,32 @@ class _no_warning_escapes:
         escaped = [str(w.message)[:80] for w in self.caught]
         assert not escaped, escaped
         return False
+
+
+def test_event_column_of_words_says_what_it_takes(cancer, tmp_path, capsys):
+    """An event column of yes/no was "'yes' is not a finite number" and nothing more."""
+    frame = cancer.assign(event=np.where(cancer.y == 1, "yes", "no"),
+                          days=np.round(np.linspace(1, 60, cancer.shape[0]), 1))
+    path = tmp_path / "late.csv"
+    frame.to_csv(path, index=False)
+    code, _, err = run(capsys, "cutoff", "--scores", path, "--score-column", "score",
+                       "--time-column", "days", "--event-column", "event", "--horizon", 30,
+                       "--cost-fp", 1, "--cost-fn", 5)
+    assert code == 1
+    assert "'yes' is not a finite number" in err
+    assert "--event-column takes 1 (the event happened) or 0 (not yet), or True / False" in err
+
+
+def test_weight_in_percent_is_not_told_to_be_a_probability(cancer, tmp_path, capsys):
+    """A weight written '12%' was told to "write scores as probabilities in [0, 1]"."""
+    frame = cancer.assign(w="1").astype(str)
+    frame.loc[4, "w"] = "12%"
+    path = tmp_path / "w.csv"
+    frame.to_csv(path, index=False)
+    code, _, err = run(capsys, "cutoff", "--scores", path, "--score-column", "score",
+                       "--label-column", "y", "--weight-column", "w", "--cost-fp", 1,
+                       "--cost-fn", 5)
+    assert code == 1
+    assert "column 'w', row 6" in err and "(--weight-column)" in err
+    assert "write the number without it (12% as 0.12, or as 12" in err
+    assert "scores" not in err

@@ -92,8 +92,14 @@ def read_late_labels(frame: Any, args: argparse.Namespace, path: str,
     # the weights' are (--weight-dots)
     time = numeric_column(frame, args.time_column, path, flag="--time-column",
                           dots=getattr(args, "weight_dots", None) or "ask")
-    event = numeric_column(_true_false_as_numbers(frame, args.event_column), args.event_column,
-                           path, flag="--event-column")
+    try:
+        event = numeric_column(_true_false_as_numbers(frame, args.event_column),
+                               args.event_column, path, flag="--event-column")
+    except DataError as exc:
+        # "'yes' is not a finite number" did not say what an event column takes
+        raise DataError(f"{exc}; --event-column takes 1 (the event happened) or 0 (not yet), "
+                        "or True / False: write other words (yes / no, ...) as 1 and 0"
+                        ) from None
     bad = ~np.isin(event, (0.0, 1.0))
     if bad.any():
         row = int(np.flatnonzero(bad)[0])

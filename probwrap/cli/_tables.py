@@ -642,7 +642,8 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
         hint = infinite_hint if np.isinf(values[row]) else ""
         what = ("the value is missing" + missing_count_text(path, series.isna().to_numpy())
                 if pd.isna(raw_value) else
-                f"{shown(raw_value)} is not a finite number{hint or _number_hint(raw_value)}"
+                f"{shown(raw_value)} is not a finite number"
+                f"{hint or _number_hint(raw_value, flag)}"
                 f"{_marker_hint(series, raw_value, path)}")
         raise DataError(f"{_row(path, column, row)}: {what}{_last_row_hint(bad)}")
     if grouped:
@@ -849,10 +850,16 @@ def _marker_hint(series: Any, value: Any, path: str | Path) -> str:
             "remove them (an empty field or NA is read as missing)")
 
 
-def _number_hint(value: Any) -> str:
-    """Why a field that looks like a number was not read as one, or ""."""
+def _number_hint(value: Any, flag: str = "--score-column") -> str:
+    """Why a field that looks like a number was not read as one, or "" (``flag``: the option
+    naming the column; the percent advice speaks of scores only for a score column)."""
     text = str(value).strip().strip('"').strip()
     if text.endswith("%") and _number(text[:-1].strip()) is not None:
+        if "score" not in flag and "class-columns" not in flag:
+            # a weight of "12%" was told to "write scores as probabilities"
+            return (f"; a percent sign is not read: write the number without it ({clean(text)} "
+                    f"as {_number(text[:-1].strip()) / 100:.15g}, or as "
+                    f"{clean(text[:-1].strip())} if the column counts in percent)")
         return (f"; a percent sign is not read: write scores as probabilities in [0, 1] "
                 f"({clean(text)} as {_number(text[:-1].strip()) / 100:.15g}) and other numbers "
                 "without it")
