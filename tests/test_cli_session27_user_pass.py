@@ -219,3 +219,29 @@ def test_weight_in_percent_is_not_told_to_be_a_probability(cancer, tmp_path, cap
     assert "column 'w', row 6" in err and "(--weight-column)" in err
     assert "write the number without it (12% as 0.12, or as 12" in err
     assert "scores" not in err
+
+
+def test_rows_after_blank_lines_are_numbered_as_a_spreadsheet_shows_them(cancer, tmp_path,
+                                                                         capsys):
+    """Blank lines between rows are skipped on reading, and every message counted rows from
+    the header without them: a bad value on line 103 below two blank lines was "row 101"."""
+    lines = cancer.to_csv(index=False).splitlines()
+    lines[100] = "abc," + lines[100].split(",", 1)[1]
+    text = "\n".join(lines[:50] + ["", "   "] + lines[50:]) + "\n"
+    assert text.splitlines().index(lines[100]) + 1 == 103
+    path = tmp_path / "gaps.csv"
+    path.write_text(text)
+    code, _, err = run(capsys, "cutoff", "--scores", path, "--score-column", "score",
+                       "--label-column", "y", "--cost-fp", 1, "--cost-fn", 5)
+    assert code == 1 and "column 'score', row 103 (counting the header as row 1)" in err
+    # the same file without its bad value reads as the plain file; a later file at the same
+    # path without blank lines is numbered line by line again
+    lines[100] = ",".join(str(v) for v in cancer.iloc[99])
+    path.write_text("\n".join(lines[:50] + [""] + lines[50:60] + ["NA,1"] + lines[60:]) + "\n")
+    code, _, err = run(capsys, "cutoff", "--scores", path, "--score-column", "score",
+                       "--label-column", "y", "--cost-fp", 1, "--cost-fn", 5)
+    assert code == 1 and "row 62 (counting the header as row 1): the value is missing" in err
+    path.write_text("\n".join(lines[:60] + ["NA,1"] + lines[60:]) + "\n")
+    code, _, err = run(capsys, "cutoff", "--scores", path, "--score-column", "score",
+                       "--label-column", "y", "--cost-fp", 1, "--cost-fn", 5)
+    assert code == 1 and "row 61 (counting the header as row 1): the value is missing" in err

@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import contextlib
 import importlib
+import os
 import re
 import sys
 from pathlib import Path
@@ -154,12 +155,34 @@ INPUT_OPTIONS = {"scores": "--scores", "unlabelled": "--unlabelled", "reference"
                  "map": "--map"}
 
 
+#: CSV files read whose data rows do not follow one another line by line (blank lines between
+#: rows, which the reader skips): the row a spreadsheet shows for each data row, by file
+_ROW_NUMBERS: dict[str, np.ndarray] = {}
+
+
+def _row_key(path: Any) -> str:
+    return "\0standard input" if isinstance(path, StandardStream) else os.path.abspath(
+        os.fspath(path))
+
+
+def set_row_numbers(path: Any, numbers: np.ndarray | None) -> None:
+    """Record the spreadsheet row of each data row of the CSV file ``path`` (header = row 1),
+    or forget it (``None``: rows follow the header line by line)."""
+    if numbers is None:
+        _ROW_NUMBERS.pop(_row_key(path), None)
+    else:
+        _ROW_NUMBERS[_row_key(path)] = np.asarray(numbers)
+
+
 def row_number(path: str | Path, row: int) -> str:
     """Where the 0-based data row ``row`` of a table is, in a message: "row 7 (counting the
-    header as row 1)" in a CSV file (as a spreadsheet numbers it), "row 6 (counting the first
-    row as row 1)" in a Parquet file (which has no header line)."""
+    header as row 1)" in a CSV file (as a spreadsheet numbers it, blank lines included), "row 6
+    (counting the first row as row 1)" in a Parquet file (which has no header line)."""
     if table_kind(path if isinstance(path, StandardStream) else Path(path)) == "Parquet":
         return f"row {row + 1} (counting the first row as row 1)"
+    numbers = _ROW_NUMBERS.get(_row_key(path))
+    if numbers is not None and 0 <= row < numbers.shape[0]:
+        return f"row {int(numbers[row])} (counting the header as row 1)"
     return f"row {row + 2} (counting the header as row 1)"
 
 

@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 
 from .._validation import cutoff_text, plain
-from ._common import DataError, clean, not_a_number, percent_hint, shown
+from ._common import DataError, clean, not_a_number, percent_hint, row_number, shown
 from ._tables import numeric_column
 
 __all__ = ["add_late_label_flags", "late_label_columns", "read_late_labels",
@@ -103,8 +103,8 @@ def read_late_labels(frame: Any, args: argparse.Namespace, path: str,
     bad = ~np.isin(event, (0.0, 1.0))
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
-        raise DataError(f"{path}: column {shown(args.event_column)}, row {row + 2} (counting "
-                        f"the header as row 1) holds {shown(event[row])}; events are 1 "
+        raise DataError(f"{path}: column {shown(args.event_column)}, {row_number(path, row)} "
+                        f"holds {shown(event[row])}; events are 1 "
                         "(happened) or 0 (not yet), or True / False")
     try:
         hl = labels_at_horizon(time, event.astype(int), args.horizon,

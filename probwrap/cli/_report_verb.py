@@ -403,9 +403,9 @@ def _class_labels(frame, args: argparse.Namespace, columns: list[str]) -> np.nda
         if not named.all():
             row = int(np.flatnonzero(~named)[0])
             raise DataError(
-                f"{args.scores}: column {shown(args.label_column)}, row {row + 2} (counting the "
-                f"header as row 1): label {shown(raw.iloc[row])} is not one of the class columns "
-                f"{', '.join(columns)}" + (
+                f"{args.scores}: column {shown(args.label_column)}, "
+                f"{row_number(args.scores, row)}: label {shown(raw.iloc[row])} is not one of "
+                f"the class columns {', '.join(columns)}" + (
                     "" if named.any() else
                     # nothing matches: the columns are probably named otherwise than the labels
                     "; the labels name the classes, so --class-columns must list columns named "
@@ -419,9 +419,9 @@ def _class_labels(frame, args: argparse.Namespace, columns: list[str]) -> np.nda
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
         raise DataError(
-            f"{args.scores}: column {shown(args.label_column)}, row {row + 2} (counting the "
-            f"header as row 1): label {shown(raw.iloc[row])} is neither a class column name nor "
-            f"an index 0..{len(columns) - 1}"
+            f"{args.scores}: column {shown(args.label_column)}, "
+            f"{row_number(args.scores, row)}: label {shown(raw.iloc[row])} is neither a class "
+            f"column name nor an index 0..{len(columns) - 1}"
         )
     return y.astype(np.intp)
 

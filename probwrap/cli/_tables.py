@@ -29,6 +29,7 @@ from ._common import (
     require,
     row_number,
     rows_text,
+    set_row_numbers,
     shown,
     table_kind,
     warn_line,
@@ -137,6 +138,9 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                 frame.attrs["csv_header"] = list(header)
             if header is not None and len(header) == 1:
                 frame = _blank_lines_as_missing(pd, frame, path, encoding, sep)
+            # rows named in messages as a spreadsheet numbers them (blank lines that were
+            # skipped counted; a one-column file's blank lines are rows already)
+            set_row_numbers(path, _spreadsheet_rows(path, encoding, sep, frame.shape[0]))
     except DataError:
         raise
     except pd.errors.EmptyDataError:
@@ -204,9 +208,15 @@ def _read_standard_input(name: Any, **options: Any) -> Any:
         path = raw.rename(raw.with_name("stdin" + suffix))
         stream.kind = table_kind(path)
         try:
-            return read_table(path, **options)
+            frame = read_table(path, **options)
         except DataError as exc:
             raise DataError(str(exc).replace(str(path), str(stream))) from None
+        # rows numbered as in the stream (blank lines between rows counted), as for a file
+        from ._common import _ROW_NUMBERS, _row_key
+
+        set_row_numbers(stream, _ROW_NUMBERS.get(_row_key(path)))
+        set_row_numbers(path, None)
+        return frame
 
 
 #: least share of a probability column's values above 1 (and at least two of them) for the
@@ -244,6 +254,36 @@ def _read_csv(pd: Any, path: Path, **options: Any) -> Any:
     except (pd.errors.ParserWarning, pd.errors.ParserError):
         _check_field_counts(path, options.get("sep", ","), options.get("encoding", "utf-8-sig"))
         raise
+
+
+def _spreadsheet_rows(path: Path, encoding: str, sep: str, n_rows: int) -> np.ndarray | None:
+    """The row a spreadsheet shows for each of the ``n_rows`` data rows of a CSV file (header =
+    row 1) when blank lines between the rows were skipped, or None when the rows follow the
+    header one by one (or the records cannot be matched to the rows).
+
+    A blank line is a row in a spreadsheet; the reader skips it, so a message counting rows
+    from the header named the row before the bad one for each blank line above it (a quoted
+    field spanning lines stays one row, as in a spreadsheet).
+    """
+    try:
+        with _open_text(path, encoding, errors="replace") as handle:
+            text = handle.read(_SCAN_CHUNK)
+            # cheap look first: no line holding only spaces between two line ends
+            if not re.search(r"(?:\r\n|\n|\r)[ \t]*(?:\r\n|\n|\r)", text) and (
+                    len(text) < _SCAN_CHUNK):
+                return None
+        with _open_text(path, encoding, errors="replace") as handle:
+            blank = [len(record) <= 1 and not "".join(record).strip()
+                     for record in _records(handle, sep)]
+    except _UNREADABLE:
+        return None
+    filled = np.flatnonzero(~np.asarray(blank, dtype=bool))
+    if filled.shape[0] != n_rows + 1:  # the header and one record per row, or no guess
+        return None
+    numbers = filled[1:] - filled[0] + 1
+    if np.array_equal(numbers, np.arange(2, n_rows + 2)):
+        return None
+    return numbers
 
 
 def _blank_lines_as_missing(pd: Any, frame: Any, path: Path, encoding: str, sep: str) -> Any:
