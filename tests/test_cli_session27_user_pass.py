@@ -142,7 +142,8 @@ def test_question_marks_for_missing_scores_and_labels_are_counted(cancer, tmp_pa
                        "--label-column", "y", "--out", tmp_path / "m.json")
     assert code == 1
     assert "(--label-column) must hold exactly two labels" in err
-    assert "'?' in 2 of 289 rows (rows 7 and 11" in err and "missing label" in err
+    assert ("'?' looks like a mark for a missing label, in 2 of 289 rows: rows 7 and 11 "
+            "(counting the header as row 1)") in err
 
 
 def test_class_columns_in_percent_do_not_offer_log_odds(tmp_path, capsys):

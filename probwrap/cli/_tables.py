@@ -1011,10 +1011,10 @@ def read_labels(
         if distinct.shape[0] > 2 and marks and not hint:
             # "?" for an unknown outcome (UCI files): read as a third label, with no row named
             flagged = np.isin(values.astype(str), [str(v) for v in marks])
-            hint = (f"; {', '.join(shown(v) for v in marks)} in {int(flagged.sum())} of "
-                    f"{values.shape[0]} rows ({rows_text(path, np.flatnonzero(flagged))}) looks "
-                    "like a mark for a missing label: rows without a label cannot be used here, "
-                    "remove them")
+            hint = (f"; {', '.join(shown(v) for v in marks)} looks like a mark for a missing "
+                    f"label, in {int(flagged.sum())} of {values.shape[0]} rows: "
+                    f"{rows_text(path, np.flatnonzero(flagged))}; rows without a label cannot "
+                    "be used here: remove them")
         if distinct.shape[0] == 3 and not hint:  # a label found only on the last row
             if _last_row_hint(values == values[-1]):
                 hint = (f"; {shown(values[-1])} is found only on the last row of the table: if "
