@@ -246,3 +246,29 @@ def test_rows_after_blank_lines_are_numbered_as_a_spreadsheet_shows_them(cancer,
     code, _, err = run(capsys, "cutoff", "--scores", path, "--score-column", "score",
                        "--label-column", "y", "--cost-fp", 1, "--cost-fn", 5)
     assert code == 1 and "row 61 (counting the header as row 1): the value is missing" in err
+
+
+def test_read_only_output_file_is_not_replaced(cancer, tmp_path, capsys, monkeypatch):
+    """``--out`` naming a read-only file in a writable folder: the file is replaced by a rename,
+    which its permissions do not stop, so a file made read-only to keep it was replaced. (The
+    check is ``os.access``; as root every file is writable, so the test stands in for a user
+    whose file is read-only.)"""
+    import os
+
+    import probwrap.cli._files as files
+
+    path = tmp_path / "scores.csv"
+    cancer.to_csv(path, index=False)
+    kept = tmp_path / "kept.csv"
+    kept.write_text("do not replace\n")
+    kept.chmod(0o444)
+    real = os.access
+    monkeypatch.setattr(files.os, "access", lambda p, mode: (
+        False if os.fspath(p) == os.fspath(kept) and mode & os.W_OK else real(p, mode)))
+    code, _, err = run(capsys, "calibrate", "fit", "--scores", path, "--score-column", "score",
+                       "--label-column", "y", "--method", "platt", "--out", tmp_path / "m.json")
+    assert code == 0, err
+    code, _, err = run(capsys, "calibrate", "apply", "--map", tmp_path / "m.json", "--scores",
+                       path, "--score-column", "score", "--out", kept)
+    assert code == 1 and "is read-only; make it writable (chmod u+w)" in err
+    assert kept.read_text() == "do not replace\n"

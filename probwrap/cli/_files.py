@@ -120,6 +120,11 @@ def check_writable(path: str | Path, *, folder: bool = False,
         raise DataError(_no_folder(path, target_dir, exc)) from None
     if not os.access(target_dir, os.W_OK | os.X_OK):
         raise DataError(f"{path}: cannot be written (the folder {target_dir} is read-only)")
+    if not folder and path.is_file() and not os.access(path, os.W_OK):
+        # the file is replaced by a rename, which a read-only file in a writable folder does
+        # not stop: a file made read-only to keep it was replaced without a word
+        raise DataError(f"{path}: is read-only; make it writable (chmod u+w) or give --out "
+                        "another file name")
 
 
 def write_atomic(path: str | Path, write: Callable[[Path], None]) -> None:
