@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 import numbers
 import re
+import warnings
 from typing import Any
 
 import numpy as np
@@ -24,6 +25,9 @@ __all__ = [
     "label_column",
     "class_index_labels",
     "costs_in_class_order",
+    "costs_by_position",
+    "cost_frame_rows",
+    "costs_by_labels",
     "power_of_two_unit",
     "check_label_types",
     "check_target_labels",
@@ -455,6 +459,82 @@ def costs_in_class_order(costs: Any, classes: Any, actions: Any = None,
                 f"`actions` {wanted[:6]}; label them with the actions (in any order)."
             )
     return values
+
+
+def costs_by_labels(costs: Any, classes: Any, actions: Any = None, *,
+                    name: str = "costs") -> Any:
+    """:func:`costs_in_class_order` for functions without an ``actions`` argument to name
+    the columns: columns labelled with the classes are put in class order, columns with other
+    labels (action names) are read by position, in their order.
+
+    Used by the report, the cost curve display and the group metrics, which know the classes
+    (from the labels, the model or ``labels=``) but name actions only for display.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> frame = pd.DataFrame([[5, 0], [0, 1]], index=["spam", "ham"], columns=["keep", "drop"])
+    >>> costs_by_labels(frame, ["ham", "spam"]).tolist()
+    [[0.0, 1.0], [5.0, 0.0]]
+    """
+    if type(costs).__name__ != "DataFrame" or not hasattr(costs, "index"):
+        return costs
+    cols = _frame_labels(costs.columns)
+    class_list = [plain(c) for c in np.asarray(classes, dtype=object).tolist()]
+    if actions is None and cols is not None and sorted(map(repr, cols)) != sorted(
+            map(repr, class_list)):
+        actions = cols
+    return costs_in_class_order(costs, class_list, actions, name=name)
+
+
+def cost_frame_rows(costs: Any) -> list | None:
+    """The row labels of a cost DataFrame, or None (not a DataFrame, or rows 0..n-1 in order).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> cost_frame_rows(pd.DataFrame([[0, 1], [5, 0]], index=["spam", "ham"]))
+    ['spam', 'ham']
+    """
+    if type(costs).__name__ != "DataFrame" or not hasattr(costs, "index"):
+        return None
+    return _frame_labels(costs.index)
+
+
+def costs_by_position(costs: Any, n_classes: int | None = None, *, name: str = "costs") -> Any:
+    """A cost DataFrame for a function that knows the classes only as positions 0..k-1 (the
+    columns of the probabilities, or 0/1 labels).
+
+    Rows labelled 0..k-1 in another order are put in order (row ``i`` is class ``i``); rows
+    with other labels (class names this function cannot place) are read by position with a
+    ``UserWarning`` naming them, where they used to be read so without a word. Column labels
+    name actions, which such functions take by position: they are left as they are. Anything
+    that is not a DataFrame is returned unchanged.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> frame = pd.DataFrame([[5, 0], [0, 1]], index=[1, 0])
+    >>> costs_by_position(frame).tolist()
+    [[0.0, 1.0], [5.0, 0.0]]
+    """
+    if type(costs).__name__ != "DataFrame" or not hasattr(costs, "index"):
+        return costs
+    rows = _frame_labels(costs.index)
+    if rows is None:
+        return costs
+    k = len(rows) if n_classes is None else n_classes
+    if sorted(map(repr, rows)) == sorted(map(repr, range(k))):
+        values = np.asarray(costs.to_numpy(dtype=float, na_value=np.nan))
+        return values[[rows.index(i) for i in range(k)]]
+    warnings.warn(
+        f"`{name}` is a DataFrame whose rows are labelled {rows[:6]}, but this function knows "
+        "the classes only by position (the columns of the probabilities, or 0/1 labels), so "
+        "its rows are read by position: row i is class i. Put the rows in that order, or "
+        "label them 0..k-1.",
+        UserWarning, stacklevel=3,
+    )
+    return costs
 
 
 def check_labels(y: Any, *, name: str = "y", classes: Any = None, min_classes: int = 2) -> tuple[np.ndarray, np.ndarray]:

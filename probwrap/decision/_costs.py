@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import plain, power_of_two_unit
+from .._validation import costs_by_position, plain, power_of_two_unit
 
 __all__ = [
     "BINARY_COST_KEYS",
@@ -185,7 +185,9 @@ def check_row_costs(
 def _resolve_costs(
     costs: Any, n_samples: int, n_classes: int, *, name: str = "costs"
 ) -> np.ndarray:
-    """Return a validated (k, a) matrix or (n, k, a) per-row array."""
+    """Return a validated (k, a) matrix or (n, k, a) per-row array (a DataFrame's rows read as
+    the classes 0..k-1, see :func:`probwrap._validation.costs_by_position`)."""
+    costs = costs_by_position(costs, n_classes, name=name)
     if not isinstance(costs, Mapping) and np.ndim(costs) == 3:
         return check_row_costs(costs, n_samples, n_classes=n_classes, name=name)
     return check_cost_matrix(costs, n_classes=n_classes, name=name)
@@ -233,7 +235,7 @@ def add_reject_action(costs: Any, reject_cost: Any) -> np.ndarray:
     array([[0. , 1. , 0.2],
            [1. , 0. , 0.2]])
     """
-    matrix = check_cost_matrix(costs)
+    matrix = check_cost_matrix(costs_by_position(costs))
     try:
         reject = np.array(reject_cost, dtype=float)
     except (TypeError, ValueError) as exc:
@@ -274,7 +276,7 @@ def plugin_cutoff(costs: Any) -> float:
     >>> round(plugin_cutoff({"fp": 2.0, "fn": 35.0}), 4)
     0.0541
     """
-    matrix = check_cost_matrix(costs, n_classes=2, n_actions=2)
+    matrix = check_cost_matrix(costs_by_position(costs, 2), n_classes=2, n_actions=2)
     with np.errstate(over="ignore"):
         d_neg = matrix[0, 1] - matrix[0, 0]  # c_fp - c_tn
         d_pos = matrix[1, 0] - matrix[1, 1]  # c_fn - c_tp

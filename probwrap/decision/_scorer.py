@@ -11,6 +11,8 @@ from .._validation import (
     check_labels,
     check_same_length,
     check_sample_weight,
+    cost_frame_rows,
+    costs_in_class_order,
     power_of_two_unit,
 )
 from ._costs import check_cost_matrix, check_row_costs
@@ -47,7 +49,9 @@ def realised_cost(
     classes : array-like of shape (n_classes,), default=None
         Class labels in the order of the rows of ``costs``. Default: the sorted distinct labels of
         ``y_true``, which must then number as many as the rows of ``costs`` -- pass ``classes``
-        explicitly when a fold may miss a class.
+        explicitly when a fold may miss a class. A pandas DataFrame of costs is read by its
+        labels: its rows put in ``classes`` order (default: its row labels are the classes), its
+        columns in ``actions`` order.
     actions : array-like of shape (n_actions,), default=None
         Action labels in the order of the columns. Default: ``classes`` (square matrices only).
     row_costs : array-like of shape (n, n_classes, n_actions), default=None
@@ -65,6 +69,12 @@ def realised_cost(
     >>> realised_cost([0, 1, 1, 0], [0, 0, 1, 1], costs={"fp": 2.0, "fn": 35.0})
     9.25
     """
+    # a DataFrame is read by its labels: rows in `classes` order (default: its row labels,
+    # which then are the classes), columns in `actions` order (default: the classes)
+    if classes is None and cost_frame_rows(costs) is not None:
+        classes = cost_frame_rows(costs)
+    if classes is not None:
+        costs = costs_in_class_order(costs, classes, actions)
     matrix = check_cost_matrix(costs)
     y_true_arr = np.asarray(y_true)
     y_pred_arr = np.asarray(y_pred)
@@ -122,7 +132,8 @@ def make_cost_scorer(costs: Any, *, classes: Any = None, actions: Any = None) ->
     costs : mapping or array-like of shape (n_classes, n_actions)
         Cost specification (see :func:`realised_cost`).
     classes : array-like of shape (n_classes,), default=None
-        Class labels in the order of the rows of ``costs``; recommended.
+        Class labels in the order of the rows of ``costs``; recommended. A DataFrame of costs
+        is read by its labels (default classes: its row labels), as in :func:`realised_cost`.
     actions : array-like of shape (n_actions,), default=None
         Action labels in the order of the columns (default: ``classes``).
 
@@ -143,6 +154,10 @@ def make_cost_scorer(costs: Any, *, classes: Any = None, actions: Any = None) ->
     >>> bool((scores <= 0).all())
     True
     """
+    if classes is None and cost_frame_rows(costs) is not None:
+        classes = cost_frame_rows(costs)  # a DataFrame's row labels name its classes
+    if classes is not None:
+        costs = costs_in_class_order(costs, classes, actions)
     matrix = check_cost_matrix(costs)
     classes_list = None if classes is None else np.asarray(classes)
     if classes_list is not None and classes_list.shape[0] != matrix.shape[0]:

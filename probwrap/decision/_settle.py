@@ -17,7 +17,12 @@ from typing import Any
 import numpy as np
 from scipy.special import betainc
 
-from .._validation import check_same_length, check_sample_weight, check_scores
+from .._validation import (
+    check_same_length,
+    check_sample_weight,
+    check_scores,
+    costs_by_position,
+)
 from ..calibration._base import count_weights
 from ._costs import check_cost_matrix, plugin_cutoff
 from ._cutoff import CutoffSearchResult, _binary_targets, search_cutoff
@@ -185,7 +190,7 @@ def settle_cutoff(
     s = check_scores(scores, name="scores", ndim=1)
     n = check_same_length(("scores", s), ("y", np.asarray(y)))
     yi = _binary_targets(y, n)
-    matrix = check_cost_matrix(costs, n_classes=2, n_actions=2)
+    matrix = check_cost_matrix(costs_by_position(costs, 2), n_classes=2, n_actions=2)
     level = _check_level(level)
     w = np.ones(n) if sample_weight is None else check_sample_weight(sample_weight, n)
     if search is None:

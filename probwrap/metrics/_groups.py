@@ -539,9 +539,13 @@ def calibration_by_group(
     if costs is not None:
         if cutoff is None:
             raise ValueError("`costs` needs `cutoff`: the mean cost is that of the rule p > cutoff.")
+        # a DataFrame read by its labels: rows in the order of `labels` (default: the sorted
+        # labels of y_true, as the positive class is read)
+        from .._validation import costs_by_labels, label_column
         from ..decision import check_cost_matrix
 
-        matrix = check_cost_matrix(costs, n_classes=2, n_actions=2)
+        pair = labels if labels is not None else np.unique(label_column(y_true, "y_true"))
+        matrix = check_cost_matrix(costs_by_labels(costs, pair), n_classes=2, n_actions=2)
     for name, value in (("min_rows", min_rows), ("min_events", min_events)):
         if isinstance(value, bool) or not isinstance(value, numbers.Real) or value < 0:
             raise ValueError(f"`{name}` must be a number >= 0; got {plain(value)!r}.")

@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import check_proba, cutoff_text
+from .._validation import check_proba, costs_by_labels, costs_by_position, cutoff_text, label_column
 from ..decision import (
     check_cost_matrix,
     cutoff_interval,
@@ -30,7 +30,7 @@ def cutoff_cost(
     multiplied back (exact in floating point), so that huge finite costs do not overflow the
     sum over rows.
     """
-    m = np.asarray(matrix, dtype=float)
+    m = np.asarray(costs_by_position(matrix, 2), dtype=float)
     top = float(np.max(np.abs(m)))
     scale = 2.0 ** np.floor(np.log2(top)) if top > 0 and np.isfinite(top) else 1.0
     return scale * realised_cost(
@@ -179,7 +179,10 @@ class CostCurveDisplay:
                     f"a binary cost curve; got shape {p.shape}."
                 )
             p = p[:, 1]
-        matrix = check_cost_matrix(costs, n_classes=2, n_actions=2)
+        # a DataFrame of costs read by its labels: rows (and columns labelled with the
+        # classes) put in (negative, positive) order
+        pair = classes if classes is not None else np.unique(label_column(y_true, "y_true"))
+        matrix = check_cost_matrix(costs_by_labels(costs, pair), n_classes=2, n_actions=2)
         res = search_cutoff(
             p, y01, matrix, sample_weight=sample_weight, capacity=capacity,
             score_bounds=(0.0, 1.0),

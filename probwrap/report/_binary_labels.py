@@ -6,10 +6,10 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import label_column, plain
+from .._validation import costs_by_labels, costs_by_position, label_column, plain
 from ..plot._common import binary_labels
 
-__all__ = ["binary_truth", "binary_class_names"]
+__all__ = ["binary_truth", "binary_class_names", "report_costs"]
 
 
 def _is_zero_one(labels: Any) -> bool:
@@ -56,3 +56,32 @@ def binary_class_names(class_names: Any, labels: Any) -> tuple[str, str]:
     if labels is not None and len(labels) == 2 and not _is_zero_one(labels):
         return tuple(str(v.item() if hasattr(v, "item") else v) for v in labels)
     return "negative", "positive"
+
+
+def report_costs(costs: Any, classes: Any, class_names: Any = None,
+                 action_names: Any = None) -> Any:
+    """The report's ``costs`` with a pandas DataFrame read by its labels.
+
+    Rows labelled with the classes (their labels, or the ``class_names`` shown for them) are
+    put in class order; columns labelled with the ``action_names`` in their order, columns
+    labelled with the classes in class order, other column labels read by position. A
+    DataFrame used to be read by position: breast cancer costs with rows (malignant, benign)
+    were read the other way round. Anything else is returned unchanged.
+    """
+    if type(costs).__name__ != "DataFrame" or not hasattr(costs, "index"):
+        return costs
+    if classes is None:
+        return costs_by_position(costs, name="costs")
+    keys = [plain(c) for c in np.asarray(classes, dtype=object).tolist()]
+    rows = [plain(v) for v in costs.index.tolist()]
+    shown = [str(r) for r in rows]
+    if (class_names is not None and len(class_names) == len(keys)
+            and sorted(map(repr, rows)) != sorted(map(repr, keys))
+            and sorted(shown) == sorted(str(c) for c in class_names)):
+        keys = [rows[shown.index(str(c))] for c in class_names]  # rows named as shown
+    actions = None
+    cols = [plain(v) for v in costs.columns.tolist()]
+    if action_names is not None and sorted(str(c) for c in cols) == sorted(
+            str(a) for a in action_names) and len(set(map(str, cols))) == len(cols):
+        actions = [cols[[str(c) for c in cols].index(str(a))] for a in action_names]
+    return costs_by_labels(costs, keys, actions, name="costs")

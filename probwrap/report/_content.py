@@ -33,7 +33,7 @@ from ..metrics._scores import log_loss_of_log_odds
 from ..metrics._slope import slope_intercept_fit, slope_intercept_fit_log_odds
 from ..plot._common import binary_labels, positive_proba
 from ..shift import PriorEstimator, adjust_to_prior, prior_by_batch, shift_cutoff
-from ._binary_labels import binary_class_names, binary_truth
+from ._binary_labels import binary_class_names, binary_truth, report_costs
 from ._binary_rules import (
     BAYES_NAME,
     CHOSEN_NAMES,
@@ -371,6 +371,8 @@ def collect_content(
     w = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
     cap = check_capacity(capacity)
     if costs is not None:
+        # a DataFrame read by its labels (rows in (negative, positive) order)
+        costs = report_costs(costs, labels, class_names, action_names)
         check_cost_matrix(costs, n_classes=2, n_actions=2)
 
     def step(name: str, done: int, total: int = 4) -> None:

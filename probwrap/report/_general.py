@@ -25,6 +25,7 @@ from ..metrics import (
 )
 from ..plot._common import class_proba
 from ..shift import PriorEstimator, prior_by_batch
+from ._binary_labels import report_costs
 from ._cells import resampling_unit, unlabelled_cell_units, unlabelled_cells_use
 from ._common import (
     MetricRow,
@@ -444,6 +445,7 @@ def general_report(*, y_true, y_prob, model, X, y, sample_weight, costs, row_cos
         raise ValueError(f"`class_names` must name the {proba.shape[1]} classes (columns of the "
                          f"probabilities); got {len(class_names)}.")
     names = tuple(str(c) for c in (class_names if class_names is not None else classes))
+    costs = report_costs(costs, classes, class_names, action_names)  # a DataFrame by labels
     return collect_general_content(
         y_index=y_index, proba=proba, class_names=names, sample_weight=sample_weight,
         costs=costs, row_costs=row_costs, capacity=capacity, action_names=action_names,

@@ -9,7 +9,7 @@ from typing import Any
 import numpy as np
 from scipy.stats import norm
 
-from .._validation import check_proba, check_sample_weight, plain
+from .._validation import check_proba, check_sample_weight, costs_by_position, plain
 from ..calibration._base import WeightScaleWarning, count_weights, rescale_extreme_weights
 from ..decision._bayes import bayes_actions
 from ..decision._costs import check_cost_matrix
@@ -299,7 +299,7 @@ def expected_cost_by_batch(
     if p.ndim == 1:
         p = np.column_stack([1.0 - p, p])
     n, k = p.shape
-    matrix = check_cost_matrix(costs, n_classes=k)
+    matrix = check_cost_matrix(costs_by_position(costs, k), n_classes=k)
     w = check_sample_weight(sample_weight, n)
     if sample_weight is not None:
         w = rescale_extreme_weights(w, "expected_cost_by_batch", stacklevel=3)
