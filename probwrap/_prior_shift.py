@@ -732,11 +732,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if est._src_fold is None:
             self._fold_models = None
         self._finish_fit(est)
+        self._refit_scored = None
         if ho.n_folds == 0:
             self.predicted_with_ = "frozen"
         elif self._refit_here:
             self._choose_predicting_models(X, est)
         self._labelled_repeats = self._repeat_counts(X, est, ho.n_folds)
+        self._refit_scored = None  # (the refit model's probabilities of X, read twice above)
         # the opt-in feature check: a bounded sample of the labelled rows' features
         keep_feature_rows(self, X, y, sample_weight)
         return self
@@ -834,7 +836,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         else:
             if not self._refit_here or _is_dask(X):
                 return None
-            proba = self._inner_output(X, "predict_proba")
+            proba = self._refit_proba(X, X)
             if proba.shape[0] != src[0].shape[0]:
                 return None
         # (and how the identical rows clump: the chance spread of the count of ties)
@@ -846,6 +848,28 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             self._labelled_row_reference = (*labelled_repeat_counts(both, src[1], k),
                                             *labelled_clumps(both, src[1], k))
         return labelled_repeat_counts(proba, src[1], k)
+
+    def _refit_proba(self, rows: Any, X: Any) -> np.ndarray:
+        """The refit model's probabilities of ``rows`` (``X`` or a sample of it) at ``fit``,
+        for the choice of the predicting models and the repeat counts: ``X`` scored once, and
+        a warning that its rows were divided by their sums (rounding) said once per ``fit``
+        (twice before: a float16 model on breast cancer)."""
+        kept = getattr(self, "_refit_scored", None)
+        if rows is X and kept is not None and kept[0] is X:
+            return kept[1]
+        said = kept is not None and kept[2]
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            proba = self._inner_output(rows, "predict_proba")
+        rounding = False
+        for w in caught:
+            if "divided by their sums" in str(w.message):
+                rounding = True
+                if said:
+                    continue
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+        self._refit_scored = (rows if rows is X else None, proba, said or rounding)
+        return proba
 
     def _choose_predicting_models(self, X: Any, est: PriorEstimator) -> None:
         """After a cross-fit whose labelled rows are kept: which models' posteriors the
@@ -865,7 +889,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if n > _SPREAD_CHECK_MAX_ROWS:  # evenly spaced rows: the check's cost stays bounded
             rows = _safe_indexing(indexable(X)[0], np.linspace(
                 0, n - 1, _SPREAD_CHECK_MAX_ROWS).astype(np.intp))
-        sets = [self._inner_output(rows, "predict_proba"), *self._fold_proba(rows)]
+        sets = [self._refit_proba(rows, X), *self._fold_proba(rows)]
         # the log-probabilities floored as CalibrationWrapper floors them (half the smallest
         # non-zero held-out probability, at least 1e-12), not at the calibration's row bound:
         # that bound flattens the tails where an unstable model's scales differ

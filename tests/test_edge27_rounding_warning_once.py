@@ -80,3 +80,20 @@ def test_prior_shift_fold_models_warn_once(data):
     assert len(fold_adapt) == 1
     assert "counted over 5 of the 5 fold models" in str(fold_adapt[0].message)
     assert len(fit_found) <= 4 and len(adapt_found) == 2
+
+
+def test_prior_shift_refit_model_warns_once_per_fit(data):
+    """The refit model's probabilities of the labelled rows were read twice at ``fit`` (the
+    choice of the predicting models, the repeat counts), each saying its rounding warning:
+    two alike warnings from one call. Now X is scored once and the warning said once."""
+    X, y = data
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        wrapper = PriorShiftWrapper(HalfPrecision()).fit(X[:200], y[:200])
+    refit = [w for w in _rounding_warnings(caught)
+             if str(w.message).startswith("The wrapped estimator")]
+    assert len(refit) == 1
+    assert "returned" in str(refit[0].message)
+    assert wrapper._refit_scored is None  # the fitted wrapper keeps no copy of them
+    p = wrapper.predict_proba(X[200:])
+    np.testing.assert_allclose(p.sum(axis=1), 1.0, atol=1e-6)
