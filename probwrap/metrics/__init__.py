@@ -40,6 +40,7 @@ from ._cost_curves import (
     lift_gain,
 )
 from ._groups import GroupCheck, GroupChecks, GroupGap, calibration_by_group
+from ._inputs import UnsortedLabelsWarning
 from ._reliability_corp import (
     CorpReliability,
     ScoreDecomposition,
@@ -61,6 +62,7 @@ __all__ = [
     "GroupChecks",
     "GroupGap",
     "ApproximatePValueWarning",
+    "UnsortedLabelsWarning",
     "HosmerLemeshowResult",
     "LiftGain",
     "ReliabilityTable",

@@ -27,6 +27,7 @@ from ..calibration._base import WeightScaleWarning, count_weights
 
 __all__ = [
     "STRATEGIES",
+    "UnsortedLabelsWarning",
     "binary_targets",
     "check_n_bins",
     "check_strategy",
@@ -37,6 +38,53 @@ __all__ = [
 ]
 
 STRATEGIES = ("uniform", "quantile")
+
+
+class UnsortedLabelsWarning(UserWarning):
+    """``labels=`` given out of sorted order with 2-d ``y_prob``.
+
+    probwrap's ``labels`` names the class of each column of ``y_prob``, in order; scikit-learn's
+    ``labels`` (``log_loss``, ``brier_score_loss``) is the label set, whose sorted order gives
+    the columns. The two readings agree exactly when ``labels`` is sorted; otherwise they pair
+    the columns with other classes and give other numbers, so this warning says which reading
+    was used. Filter it when the columns really are in the given order (e.g. the ``classes_`` of
+    a model that does not sort them).
+    """
+
+
+def _warn_unsorted_labels(labels: Any, idx: np.ndarray, p: np.ndarray) -> None:
+    """:class:`UnsortedLabelsWarning` when ``labels`` (one per column of ``p``) is not in sorted
+    order, the order matters for these rows (a class of ``y_true`` sorts to another column),
+    and the probabilities fit the sorted reading better: the rows' mean log-probability of
+    their class is higher with column ``j`` read as the ``j``-th sorted label. Columns that fit
+    the given order (class names listed in column order) stay quiet; labels that cannot be
+    sorted together are left alone."""
+    classes = np.asarray(labels)
+    try:
+        order = np.argsort(classes, kind="stable")
+    except TypeError:
+        return
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.shape[0])  # the column of each class in the sorted reading
+    if np.array_equal(rank[idx], idx):
+        return  # sorted, or only classes absent from y_true out of place: the same number
+    rows = np.arange(idx.shape[0])
+    tiny = np.finfo(float).tiny
+    given = np.mean(np.log(np.maximum(p[rows, idx], tiny)))
+    by_sort = np.mean(np.log(np.maximum(p[rows, rank[idx]], tiny)))
+    if not by_sort > given:
+        return
+    shown = [plain(c) for c in classes.tolist()][:6]
+    warnings.warn(
+        f"`labels` {shown} is not sorted: it is read as the class of each column of `y_prob` "
+        f"(column 0 is {shown[0]!r}), not as scikit-learn's label set, whose sorted order "
+        f"would make column 0 {plain(classes[order[0]])!r}; the rows fit that sorted reading "
+        f"better (mean log-probability of their class {by_sort:.3g} against {given:.3g}). If "
+        "the columns are in sorted order (a scikit-learn model's predict_proba), pass the "
+        "labels sorted or model.classes_; if they are in the given order, filter "
+        "probwrap.metrics.UnsortedLabelsWarning.",
+        UnsortedLabelsWarning, stacklevel=4,
+    )
 
 
 def _label_array(y_true: Any) -> np.ndarray:
@@ -143,7 +191,10 @@ def prepare_binary(
                 f"`y_prob` must be 1-d positive-class probabilities (or two columns) for this "
                 f"binary metric; got shape {p.shape}."
             )
-        y01 = class_indices(y_true, 2, labels).astype(float)
+        idx = class_indices(y_true, 2, labels)
+        if labels is not None:
+            _warn_unsorted_labels(labels, idx, p)
+        y01 = idx.astype(float)
         return y01, p[:, 1], w
     return binary_targets(y_true, labels), p, w
 
@@ -159,7 +210,10 @@ def prepare_any(
     p, w = _prepare_proba(y_true, y_prob, sample_weight)
     if p.ndim == 1:
         return binary_targets(y_true, labels), p, w
-    return class_indices(y_true, p.shape[1], labels), p, w
+    idx = class_indices(y_true, p.shape[1], labels)
+    if labels is not None:
+        _warn_unsorted_labels(labels, idx, p)
+    return idx, p, w
 
 
 def check_n_bins(n_bins: Any, name: str = "n_bins") -> int:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from typing import Any
 
 import numpy as np
@@ -261,10 +262,16 @@ class ReliabilityDiagram:
         """
         proba = class_proba(estimator, X)
         if proba.shape[1] > 2:
-            return cls.from_predictions(
-                y, proba, labels=estimator_classes(estimator),
-                name=name or type(estimator).__name__, **kwargs,
-            )
+            # the columns are the model's classes_ in its own order: no warning that they are
+            # not sorted (metrics.UnsortedLabelsWarning is for labels a user gives)
+            from ..metrics import UnsortedLabelsWarning
+
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", UnsortedLabelsWarning)
+                return cls.from_predictions(
+                    y, proba, labels=estimator_classes(estimator),
+                    name=name or type(estimator).__name__, **kwargs,
+                )
         p = proba[:, 1]
         y01 = binary_labels(y, estimator_classes(estimator))
         return cls.from_predictions(
