@@ -55,8 +55,9 @@ class UnsortedLabelsWarning(UserWarning):
 def _warn_unsorted_labels(labels: Any, idx: np.ndarray, p: np.ndarray) -> None:
     """:class:`UnsortedLabelsWarning` when ``labels`` (one per column of ``p``) is not in sorted
     order, the order matters for these rows (a class of ``y_true`` sorts to another column),
-    and the probabilities fit the sorted reading better: the rows' mean log-probability of
-    their class is higher with column ``j`` read as the ``j``-th sorted label. Columns that fit
+    and the probabilities fit the sorted reading clearly better: the rows' mean log-probability
+    of their class is higher with column ``j`` read as the ``j``-th sorted label, by more than
+    two standard errors of the paired difference. Columns that fit
     the given order (class names listed in column order) stay quiet; labels that cannot be
     sorted together are left alone."""
     classes = np.asarray(labels)
@@ -70,9 +71,14 @@ def _warn_unsorted_labels(labels: Any, idx: np.ndarray, p: np.ndarray) -> None:
         return  # sorted, or only classes absent from y_true out of place: the same number
     rows = np.arange(idx.shape[0])
     tiny = np.finfo(float).tiny
-    given = np.mean(np.log(np.maximum(p[rows, idx], tiny)))
-    by_sort = np.mean(np.log(np.maximum(p[rows, rank[idx]], tiny)))
-    if not by_sort > given:
+    log_given = np.log(np.maximum(p[rows, idx], tiny))
+    log_sorted = np.log(np.maximum(p[rows, rank[idx]], tiny))
+    given, by_sort = float(np.mean(log_given)), float(np.mean(log_sorted))
+    # clearly better: the mean gain per row above two standard errors of it (paired rows; a
+    # rule of thumb), so that a model with near-equal columns does not warn by chance
+    gain = log_sorted - log_given
+    n = gain.shape[0]
+    if n < 2 or not np.mean(gain) > 2.0 * np.std(gain, ddof=1) / np.sqrt(n):
         return
     shown = [plain(c) for c in classes.tolist()][:6]
     warnings.warn(
