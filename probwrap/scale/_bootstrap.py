@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import plain
+from .._validation import costs_by_position, plain
 from ._tally import ScoreTally
 
 __all__ = ["tally_cutoff_interval", "tally_prior_interval"]
@@ -71,6 +71,8 @@ def tally_cutoff_interval(
         raise ValueError(f"`confidence_level` must be in (0, 1); got {plain(confidence_level)!r}.")
     proba, y, _ = tally.to_rows(proba=True)
     p = proba[:, 1]
+    # a cost DataFrame read once (rows 0/1 put in order, or one warning), not per replicate
+    costs = costs_by_position(costs, 2)
     reps = tally.replicate_row_weights()
     found = np.full(reps.shape[0], np.nan)
     for b in range(reps.shape[0]):
