@@ -90,6 +90,20 @@ FOLD_SPREAD_VARIATION_LIMIT = 0.10
 #: predicts").
 REFIT_WIDER_LIMIT = 1.10
 
+#: ``predict_with="auto"`` also predicts with the fold models when they disagree about the
+#: labelled rows (``fold_disagreement_``: the variance of their map input scores across fold
+#: models, averaged over the rows, over the variance across rows of the fold models' mean
+#: score) by more than this, again unless the refit spreads more widely than every fold model
+#: (:data:`REFIT_WIDER_LIMIT`). Such a model changes with the rows it is fitted on (a decision
+#: tree, boosting on a few hundred rows), so the average of the fold models is a smoother,
+#: better model than any one fit, and the refit is one more unstable fit. Chosen in session 27
+#: (benchmarks/hunt27_sweep.py's binary sets, cross-fitted, 40-300 rows, two draws, 151 cells;
+#: 0.01-0.2 tried): test log loss over scikit-learn's sigmoid 0.945 -> 0.924, cells above 1.10x
+#: 6 -> 0 (a single tree on openintro's bdims, 100 rows: 0.429 -> 0.329, the sigmoid 0.322),
+#: worst cell over the old rule 1.04; checked on hunt26_sweep.py's sets with nearest neighbours
+#: and SGD (docs/calibration.md, "Which model predicts").
+FOLD_DISAGREEMENT_LIMIT = 0.03
+
 
 def spread_check(spreads: Any) -> tuple[np.ndarray, float]:
     """``(refit_spread_ratios_, fold_spread_variation_)`` from the spreads (standard
@@ -109,13 +123,30 @@ def spread_check(spreads: Any) -> tuple[np.ndarray, float]:
     return ratios, unstable
 
 
-def fold_models_predict(ratios: np.ndarray, variation: float) -> bool:
+def fold_disagreement(fold_scores: list[np.ndarray]) -> float:
+    """``fold_disagreement_``: how much the fold models disagree about the same rows, as the
+    variance of their scores across fold models (averaged over rows and score columns) over
+    the variance across rows of the fold models' mean score; each array of shape (n, c) holds
+    one fold model's map input scores on the labelled rows. 0 when there are fewer than two
+    fold models or the mean score does not vary over the rows."""
+    if len(fold_scores) < 2:
+        return 0.0
+    s = np.stack([np.asarray(f, dtype=float) for f in fold_scores])
+    between = float(np.mean(s.mean(axis=0).var(axis=0)))
+    if not np.isfinite(between) or between <= 1e-12 * max(1.0, float(np.abs(s).max())):
+        return 0.0
+    return float(np.mean(s.var(axis=0, ddof=1))) / between
+
+
+def fold_models_predict(ratios: np.ndarray, variation: float, disagreement: float = 0.0) -> bool:
     """``predict_with="auto"``'s rule: the fold models predict when their spreads vary from
-    fold to fold (``variation`` above :data:`FOLD_SPREAD_VARIATION_LIMIT`) and the refit does
+    fold to fold (``variation`` above :data:`FOLD_SPREAD_VARIATION_LIMIT`) or they disagree
+    about the rows (``disagreement`` above :data:`FOLD_DISAGREEMENT_LIMIT`), and the refit does
     not spread more widely than every one of them by more than :data:`REFIT_WIDER_LIMIT`."""
     ratios = np.asarray(ratios, dtype=float)
     wider = ratios.size > 0 and bool(np.min(ratios) > REFIT_WIDER_LIMIT)
-    return bool(variation > FOLD_SPREAD_VARIATION_LIMIT) and not wider
+    unstable = variation > FOLD_SPREAD_VARIATION_LIMIT or disagreement > FOLD_DISAGREEMENT_LIMIT
+    return bool(unstable) and not wider
 
 #: ``method="auto"`` with two classes, cross-fitted and predicting with the refit: a chosen
 #: temperature that sharpens (``T < 1``) is capped at 1 when the refitted model's scores spread
@@ -325,6 +356,13 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         the fold models' spreads on the labelled rows. ``predict_with="auto"`` predicts with
         the fold models when it exceeds 0.10 (``inf`` when some fold model, but not all,
         scores every row alike).
+    fold_disagreement_ : float
+        Cross-fitted models only (NaN for a frozen one): how much the fold models disagree
+        about the labelled rows, the variance of their map input scores across fold models
+        (averaged over the rows) over the variance across rows of their mean score (0 when a
+        fold model lacks a class). ``predict_with="auto"`` also predicts with the fold models
+        when it exceeds 0.03 (a decision tree, boosting on a few hundred rows; since session
+        27), unless the refit spreads more widely than every fold model.
 
     Examples
     --------
@@ -431,6 +469,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         self.fold_models_ = []
         self.refit_spread_ratios_ = np.empty(0)
         self.fold_spread_variation_ = np.nan
+        self.fold_disagreement_ = np.nan
         self.response_ = ho.response
         self._cross_fitted = ho.n_folds > 0
         self.clip_ = self._choose_clip(ho.values, ho.sample_weight)
@@ -660,11 +699,14 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             if table:
                 counts = counts[picked]
         spreads = []
+        fold_scores = []
         complete = True
         for model, fold_classes in [(self.estimator_, self.classes_), *models]:
             out = np.asarray(getattr(model, response)(X), dtype=float)
             complete &= fold_classes.shape[0] == self.classes_.shape[0]
             s = self._check_scores(fold_columns(fold_classes, out, self.classes_, response))
+            if model is not self.estimator_:
+                fold_scores.append(s)
             if table:
                 mean = np.average(s, axis=0, weights=counts)
                 sd = float(np.sqrt(np.mean(np.average((s - mean) ** 2, axis=0,
@@ -676,13 +718,15 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         ratios, unstable = spread_check(spreads)
         self.refit_spread_ratios_ = ratios
         self.fold_spread_variation_ = unstable
-        off = fold_models_predict(ratios, unstable)  # (the warning below names the variation)
+        self.fold_disagreement_ = fold_disagreement(fold_scores) if complete else 0.0
+        off = fold_models_predict(ratios, unstable, self.fold_disagreement_)
+        off_scale = fold_models_predict(ratios, unstable)  # (the warning below names it)
         if self.predict_with == "fold_models" or (self.predict_with == "auto" and off
                                                    and complete):
             self.predicted_with_ = "fold_models"
             self.fold_models_ = [model for model, _ in models]
             self._fold_classes = [fold_classes for _, fold_classes in models]
-        elif self.predict_with == "refit" and off and complete:
+        elif self.predict_with == "refit" and off_scale and complete:
             # (a fold model without some class scores it far below the rest, which is not a
             # scale of its own: that case has the absent-class warning of the cross-fit)
             warnings.warn(
@@ -771,6 +815,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         self.calibrator_ = fitted
         self.predicted_with_, self.fold_models_ = "frozen", []
         self.refit_spread_ratios_, self.fold_spread_variation_ = np.empty(0), np.nan
+        self.fold_disagreement_ = np.nan
         return self
 
     def _check_method(self) -> None:

@@ -10,7 +10,12 @@ from typing import Any
 import numpy as np
 from sklearn.utils import _safe_indexing, indexable
 
-from ._calibration_wrapper import _PREDICT_WITH, fold_models_predict, spread_check
+from ._calibration_wrapper import (
+    _PREDICT_WITH,
+    fold_disagreement,
+    fold_models_predict,
+    spread_check,
+)
 from ._cost_policy import SMALL_HELDOUT_ROWS, SUMMARY_BINS
 from ._heldout import (
     HeldOutClassifierBase,
@@ -294,8 +299,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         interval's centre; since 4 December 2026, before from the posteriors it re-weights:
         docs/prior_shift.md, "The point estimate after a refit"). ``"auto"``: the rule of
         :class:`~probwrap.CalibrationWrapper`: the fold models when their score spreads on
-        the labelled rows vary from fold to fold (``fold_spread_variation_`` above 0.10)
-        unless the refit spreads more than 1.1 times as widely as every fold model. Measured
+        the labelled rows vary from fold to fold (``fold_spread_variation_`` above 0.10) or
+        the fold models disagree about the rows (``fold_disagreement_`` above 0.03, since
+        session 27) unless the refit spreads more than 1.1 times as widely as every fold model. Measured
         on 27-60 labelled rows in docs/prior_shift.md, "Which model predicts after
         cross-fitting" (since 4 December 2026; before, always the refit).
     interval_covers : {"each_class", "all_classes"}, default="each_class"
@@ -346,6 +352,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     fold_spread_variation_ : float
         The standard deviation of the logs of the fold models' spreads (NaN where not
         measured; see ``predict_with``).
+    fold_disagreement_ : float
+        How much the fold models disagree about the labelled rows, as for
+        :class:`~probwrap.CalibrationWrapper` (NaN where not measured; see ``predict_with``).
     calibrator_ : BiasCorrectedScaling or None
         The calibration used for estimation and adjustment.
     output_map_ : CalibrationWrapper or None
@@ -658,6 +667,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 "feature_check_rows=None for Dask or Spark rows.")
         self.predicted_with_ = "refit"
         self.refit_spread_ratios_, self.fold_spread_variation_ = np.empty(0), np.nan
+        self.fold_disagreement_ = np.nan
         self._labelled_repeats = None  # (adapt's RepeatedRowsWarning)
         self._labelled_clumps = None
         self._labelled_row_reference = None
@@ -897,9 +907,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         positive = held[held > 0]
         clip = clip_from_smallest(float(positive.min()) if positive.size else np.inf)
         spreads = []
-        for p in sets:
+        fold_scores = []
+        for i, p in enumerate(sets):
             z = proba_to_log_proba(p, clip=clip)
             z = z - z.mean(axis=1, keepdims=True)
+            if i > 0:
+                fold_scores.append(z)
             sd = float(np.sqrt(np.mean(z.var(axis=0))))
             # a model that scores every row alike (up to rounding) has no spread
             spreads.append(sd if sd > 1e-9 * max(1.0, float(np.abs(z).max())) else 0.0)
@@ -909,9 +922,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         # of its own: "auto" keeps the refit there, as CalibrationWrapper does)
         complete = all(np.asarray(classes).shape[0] == self.classes_.shape[0]
                        for _, classes in self._fold_models)
+        self.fold_disagreement_ = fold_disagreement(fold_scores) if complete else 0.0
         if self.predict_with == "fold_models" or (
                 self.predict_with == "auto" and complete
-                and fold_models_predict(ratios, variation)):
+                and fold_models_predict(ratios, variation, self.fold_disagreement_)):
             src = est._source_rows()
             self.predicted_with_ = "fold_models"
             self._fold_share = fold_shares(est._src_fold, src[1], src[2],
