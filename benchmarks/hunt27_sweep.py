@@ -48,7 +48,14 @@ Run: ``nice python benchmarks/hunt27_sweep.py --quick`` (seven sets, cross and f
 100 rows, a few minutes), ``nice python benchmarks/hunt27_sweep.py`` (every set, one draw: the
 numbers of docs/small_data.md, "Session-27 sweep"), ``--sets bdims,minn38``, ``--modes frozen``,
 ``--models nb``, ``--sizes 40``, ``--seeds 3``, ``--first-seed 1``, ``--no-fixed``, ``--csv FILE``,
-``--from-csv A.csv``, ``--list``."""
+``--from-csv A.csv``, ``--list``.
+
+``--fold-check`` re-reads ``predict_with="auto"``'s rule (session 27, ``fold_disagreement_``):
+the table of docs/calibration.md, "Which model predicts", came from ``--fold-check --sets
+bdims,budgetfood,psid7682,fertility,mplsstops,loans,evals,youthrisk,nlschools,sportscards,hearttransplant,toothgrowth
+--models tree,gb,rf,lr,nb --seeds 2`` and ``--fold-check --from-module hunt26_sweep --sets
+psid1976,nsw74psid3,channinghouse,engin,solder,vlt,hepatocellular,diabetic,friendfoe,htv --models
+knn,tree,gb,sgd,lr``."""
 
 from __future__ import annotations
 
@@ -432,6 +439,62 @@ def summarise(df: pd.DataFrame) -> None:
     print("warnings seen (* probwrap's): " + (", ".join(names) or "none"))
 
 
+def fold_check(task_list, model_names: list[str], seeds: int) -> pd.DataFrame:
+    """``--fold-check``: binary sets cross-fitted at every size, one fit per cell with
+    ``predict_with="fold_models"``; the refit's probabilities are read from the same fit, with
+    the fold models' disagreement and spread statistics, so that ``predict_with="auto"``'s rule
+    can be re-read for any limit (docs/calibration.md, "Which model predicts")."""
+    from sklearn.linear_model import SGDClassifier
+    from sklearn.neighbors import KNeighborsClassifier
+
+    from probwrap._calibration_wrapper import fold_disagreement
+
+    ms = models()
+    ms["knn"] = KNeighborsClassifier(15)
+    ms["sgd"] = SGDClassifier(loss="log_loss", random_state=0)
+    rows = []
+    for t in task_list:
+        if len(np.unique(t.y)) != 2 or t.table:
+            continue
+        for n in B.sizes_for(t, "cross"):
+            for m in model_names:
+                for s in range(seeds):
+                    _, cal, te = B.draw(t, n, "cross", s)
+                    Xc, yc = t.X.iloc[cal].reset_index(drop=True), t.y[cal]
+                    Xt, yt = t.X.iloc[te].reset_index(drop=True), t.y[te]
+                    classes = np.unique(yc)
+                    sig = _sig(clone(ms[m]), Xc, yc, None, False)
+                    np.random.seed(1000 + s)  # noqa: NPY002
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("ignore")
+                        est = CalibrationWrapper(clone(ms[m]), predict_with="fold_models").fit(Xc, yc)
+                        pf = est.predict_proba(Xt)
+                        est.predicted_with_ = "refit"
+                        pr = est.predict_proba(Xt)
+                        scores = [est._check_scores(f.predict_proba(Xc)) for f in est.fold_models_]
+                    rows.append(dict(set=t.name, model=m, n=n, seed=s,
+                                     sig=H.log_loss(yt, sig.predict_proba(Xt), classes),
+                                     refit=H.log_loss(yt, pr, classes), folds=H.log_loss(yt, pf, classes),
+                                     D=fold_disagreement(scores), var=est.fold_spread_variation_,
+                                     rmin=float(np.min(est.refit_spread_ratios_))))
+                    r = rows[-1]
+                    print(f"{t.name} {m} {n} {s} sig {r['sig']:.3f} refit {r['refit']:.3f} folds {r['folds']:.3f}"
+                          f" D {r['D']:.3f} var {r['var']:.3f} rmin {r['rmin']:.2f}", flush=True)
+    d = pd.DataFrame(rows)
+    if d.empty:
+        return d
+    old = pd.Series(np.where((d["var"] > 0.10) & ~(d["rmin"] > 1.1), d["folds"], d["refit"]))
+    print(f"\n{len(d)} cells; over the sigmoid (geometric mean | worst | above 1.10x): spread rule alone"
+          f" {B._gm(old / d['sig']):.3f} | {(old / d['sig']).max():.2f} | {int((old / d['sig'] > 1.1).sum())};"
+          f" always the fold models {B._gm(d['folds'] / d['sig']):.3f} | {(d['folds'] / d['sig']).max():.2f}")
+    for lim in (0.01, 0.02, 0.03, 0.05, 0.08, 0.1, 0.2):
+        new = np.where(((d["var"] > 0.10) | (d["D"] > lim)) & ~(d["rmin"] > 1.1), d["folds"], d["refit"])
+        r, ro = pd.Series(new / d["sig"]), pd.Series(new / old)
+        print(f"  disagreement above {lim:4.2f}: {B._gm(r):.4f} | {r.max():.3f} | {int((r > 1.1).sum())};"
+              f" over the spread rule alone {B._gm(ro):.4f}, worst {ro.max():.3f}, switched {int((new != old).sum())}")
+    return d
+
+
 def main(argv: list[str]) -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--quick", action="store_true")
@@ -445,7 +508,21 @@ def main(argv: list[str]) -> None:
     ap.add_argument("--list", action="store_true")
     ap.add_argument("--csv", default="")
     ap.add_argument("--from-csv", default="")
+    ap.add_argument("--fold-check", action="store_true",
+                    help="predict_with's rule: refit against fold models on the binary sets (--sets, --models, --seeds)")
+    ap.add_argument("--from-module", default="", help="with --fold-check: another sweep's sets, e.g. hunt26_sweep")
     a = ap.parse_args(argv)
+    if a.fold_check:
+        import importlib
+
+        pool = importlib.import_module(a.from_module).tasks() if a.from_module else tasks()
+        for t in pool:
+            t.table = getattr(t, "table", False)
+        picked = [t for t in pool if not a.sets or t.name in a.sets.split(",")]
+        d = fold_check(picked, a.models.split(","), a.seeds)
+        if a.csv:
+            d.to_csv(a.csv, index=False)
+        return
     if a.from_csv:
         summarise(pd.concat([pd.read_csv(f) for f in a.from_csv.split(",")], ignore_index=True))
         return

@@ -276,11 +276,13 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         of one prediction per fold. ``"auto"``: the refitted model unless the fold
         models score the labelled rows on scales that differ from fold to fold (a model whose
         scale changes from fit to fit, such as ``SGDClassifier``; see
-        ``fold_spread_variation_``): the refitted model's scale is then one more draw that the
-        map does not know, and the fold models predict — unless the refit spreads its scores
-        more than 1.1 times as widely as every fold model (nearest neighbours: a sharper
-        model, not another draw; since 4 December 2026). ``"refit"`` warns where ``"auto"``
-        would switch. Measured on small bundled sets in docs/calibration.md, "Which model
+        ``fold_spread_variation_``) or disagree about the rows (a decision tree, boosting on a
+        few hundred rows; ``fold_disagreement_``, since session 27): the refitted model is
+        then one more unstable draw that the map does not know, and the fold models
+        predict — unless the refit spreads its scores more than 1.1 times as widely as every
+        fold model (nearest neighbours: a sharper model, not another draw; since 4 December
+        2026). ``"refit"`` warns where ``"auto"`` would switch for scales that vary.
+        Measured on small bundled sets in docs/calibration.md, "Which model
         predicts".
 
     Attributes
