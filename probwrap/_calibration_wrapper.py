@@ -125,19 +125,27 @@ def spread_check(spreads: Any) -> tuple[np.ndarray, float]:
     return ratios, unstable
 
 
-def fold_disagreement(fold_scores: list[np.ndarray]) -> float:
+def fold_disagreement(fold_scores: list[np.ndarray], sample_weight: Any = None) -> float:
     """``fold_disagreement_``: how much the fold models disagree about the same rows, as the
     variance of their scores across fold models (averaged over rows and score columns) over
     the variance across rows of the fold models' mean score; each array of shape (n, c) holds
-    one fold model's map input scores on the labelled rows. 0 when there are fewer than two
-    fold models or the mean score does not vary over the rows."""
+    one fold model's map input scores on the labelled rows. Rows are weighted by
+    ``sample_weight`` (a row of weight 2 counts as two rows; the scale does not matter).
+    0 when there are fewer than two fold models or the mean score does not vary over the
+    rows."""
     if len(fold_scores) < 2:
         return 0.0
     s = np.stack([np.asarray(f, dtype=float) for f in fold_scores])
-    between = float(np.mean(s.mean(axis=0).var(axis=0)))
+    w = np.ones(s.shape[1]) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    if w.shape != (s.shape[1],) or not np.all(np.isfinite(w)) or not w.sum() > 0:
+        w = np.ones(s.shape[1])
+    w = w / w.sum()
+    mean = s.mean(axis=0)  # (n, c)
+    centre = w @ mean
+    between = float(np.mean(w @ (mean - centre) ** 2))
     if not np.isfinite(between) or between <= 1e-12 * max(1.0, float(np.abs(s).max())):
         return 0.0
-    return float(np.mean(s.var(axis=0, ddof=1))) / between
+    return float(np.mean(w @ s.var(axis=0, ddof=1))) / between
 
 
 def fold_models_predict(ratios: np.ndarray, variation: float, disagreement: float = 0.0) -> bool:
@@ -692,16 +700,18 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         response = self.response_
         n = ho.y_index.shape[0]
         # a count table cross-fitted by its cases (session 27): X's rows, each as many times
-        # as its count, as the spread of the rows repeated
-        table = getattr(ho, "table_row", None) is not None
-        if table:
-            counts = np.round(np.asarray(ho.row_weight, dtype=float))
-            n = counts.shape[0]
+        # as its count, as the spread of the rows repeated; other weights: a row of weight 2
+        # counts as two rows
+        if getattr(ho, "table_row", None) is not None:
+            w = np.round(np.asarray(ho.row_weight, dtype=float))
+            n = w.shape[0]
+        else:
+            w = ho.sample_weight
+            w = None if w is None or np.shape(w) != (n,) else np.asarray(w, dtype=float)
         if n > _SPREAD_CHECK_MAX_ROWS:  # evenly spaced rows: the check's cost stays bounded
-            picked = np.linspace(0, n - 1, _SPREAD_CHECK_MAX_ROWS).astype(np.intp)
-            X = _safe_indexing(indexable(X)[0], picked)
-            if table:
-                counts = counts[picked]
+            pick = np.linspace(0, n - 1, _SPREAD_CHECK_MAX_ROWS).astype(np.intp)
+            X = _safe_indexing(indexable(X)[0], pick)
+            w = None if w is None else w[pick]
         spreads = []
         fold_scores = []
         complete = True
@@ -711,19 +721,22 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             s = self._check_scores(fold_columns(fold_classes, out, self.classes_, response))
             if model is not self.estimator_:
                 fold_scores.append(s)
-            if table:
-                mean = np.average(s, axis=0, weights=counts)
-                sd = float(np.sqrt(np.mean(np.average((s - mean) ** 2, axis=0,
-                                                      weights=counts))))
-            else:
+            if w is None or not w.sum() > 0:
                 sd = float(np.sqrt(np.mean(s.var(axis=0))))
+            else:  # a row of weight 2 counts as two rows (the duplicated rows' spread)
+                centred = s - (w @ s) / w.sum()
+                sd = float(np.sqrt(np.mean((w @ centred**2) / w.sum())))
             # a model that scores every row alike (up to rounding) has no spread
             spreads.append(sd if sd > 1e-9 * max(1.0, float(np.abs(s).max())) else 0.0)
         ratios, unstable = spread_check(spreads)
         self.refit_spread_ratios_ = ratios
         self.fold_spread_variation_ = unstable
-        self.fold_disagreement_ = fold_disagreement(fold_scores) if complete else 0.0
-        off = fold_models_predict(ratios, unstable, self.fold_disagreement_)
+        self.fold_disagreement_ = fold_disagreement(fold_scores, w) if complete else 0.0
+        # (a step map is left to the spread rule: its fold average was not measured, and its
+        # steps turn rounding-level differences between fold models into jumps)
+        step = (isinstance(self.method, _ORDER_BASED)
+                or getattr(self, "method_", None) in ("isotonic", "binning", "venn_abers"))
+        off = fold_models_predict(ratios, unstable, 0.0 if step else self.fold_disagreement_)
         off_scale = fold_models_predict(ratios, unstable)  # (the warning below names it)
         if self.predict_with == "fold_models" or (self.predict_with == "auto" and off
                                                    and complete):

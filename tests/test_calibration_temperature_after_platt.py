@@ -64,11 +64,11 @@ def _voteincome_rare_draw(seed: int = 0, n_cal: int = 100, rare: float = 0.05):
     return (X.iloc[cal].reset_index(drop=True), y[cal]), (X.iloc[te].reset_index(drop=True), y[te])
 
 
-def _fit(Xc, yc, sample_weight=None):
+def _fit(Xc, yc, sample_weight=None, predict_with="auto"):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        return CalibrationWrapper(LogisticRegression(max_iter=5000), random_state=0).fit(
-            Xc, yc, sample_weight=sample_weight)
+        return CalibrationWrapper(LogisticRegression(max_iter=5000), random_state=0,
+                                  predict_with=predict_with).fit(Xc, yc, sample_weight=sample_weight)
 
 
 @pytest.fixture(scope="module")
@@ -97,9 +97,11 @@ def test_voteincome_temperature_passed_over_after_platt(vote, monkeypatch):
     assert cw.method_ == "beta"
     ours = _log_loss(cw, Xt, yt)
     assert ours < sk  # about 0.96x scikit-learn's sigmoid
-    # before: temperature scaling kept, 1.10x the sigmoid
+    # before: temperature scaling kept, 1.10x the sigmoid (with the refit predicting, as then;
+    # since session 27 the fold models, which disagree about these rows, predict under "auto"
+    # and soften the kept temperature's harm to 1.077x)
     monkeypatch.setattr(auto_module, "_PASS_OVER_TEMPERATURE_AFTER_PLATT", False)
-    old = _fit(Xc, yc)
+    old = _fit(Xc, yc, predict_with="refit")
     assert old.method_ == "temperature"
     assert _log_loss(old, Xt, yt) > 1.08 * sk
 
