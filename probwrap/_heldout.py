@@ -289,7 +289,12 @@ def _adjacent_equal(sorted_keys: np.ndarray, block: int = 1 << 16) -> bool:
     return False
 
 
-def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray) -> np.ndarray | None:
+#: ``feature_cells``'s ``index`` when none is passed: hash the rows there
+_HASH_ROWS = object()
+
+
+def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray, *,
+                  index: Any = _HASH_ROWS) -> np.ndarray | None:
     """Cell of every row (rows with identical features share one) when weighted rows with
     identical features carry different labels, else None.
 
@@ -305,13 +310,39 @@ def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray)
     the folds and ``"auto"``'s choice on a forest's tied scores), on 2-d NumPy arrays and
     DataFrames (other inputs give None). Otherwise, with
     or without weights, the cells of rows that are copies of one another
-    (:func:`copied_row_cells`), every other row in a cell of its own, or None.
+    (:func:`copied_row_cells`), every other row in a cell of its own, or None. ``index``:
+    :func:`feature_cell_index` of ``X`` when the caller has it already (the rows are hashed
+    here otherwise).
     """
     # equal weights (of any size: 1, 2, 1/n) say nothing about counts; they leave the folds as
     # without weights, so rescaling every weight cannot move them
     sw = None if sample_weight is None else np.asarray(sample_weight, dtype=float).ravel()
     weighted = sw is not None and sw.size > 0 and bool(np.any(sw != sw[0]))
     n = y_index.shape[0]
+    cells = feature_cell_index(X, n) if index is _HASH_ROWS else index
+    if cells is None:
+        return None
+    if weighted:
+        n_cells = int(cells.max()) + 1
+        lo = np.full(n_cells, np.iinfo(np.intp).max)
+        hi = np.full(n_cells, -1)
+        y_index = np.asarray(y_index, dtype=np.intp)
+        np.minimum.at(lo, cells, y_index)
+        np.maximum.at(hi, cells, y_index)
+        if np.any(hi > lo):
+            return cells
+    try:
+        return copied_row_cells(X, cells)
+    except (TypeError, ValueError):  # a column whose values cannot be compared
+        return None
+
+
+def feature_cell_index(X: Any, n: int) -> np.ndarray | None:
+    """Index of every row's group of identical features (``np.unique``'s inverse of the row
+    hashes), or None when every row is distinct, the rows cannot be hashed (inputs other than
+    2-d numeric NumPy arrays and DataFrames) or their number is not ``n``: the first step of
+    :func:`feature_cells`, which a caller asking for the cells with and without weights (a
+    count table's cells and its cases' cells) passes to both as ``index`` to hash once."""
     if hasattr(X, "iloc") and hasattr(X, "columns"):
         def row_keys() -> np.ndarray:
             import pandas as pd
@@ -342,18 +373,7 @@ def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray)
     n_cells = int(cells.max()) + 1 if n else 0
     if n_cells == n:
         return None
-    if weighted:
-        lo = np.full(n_cells, np.iinfo(np.intp).max)
-        hi = np.full(n_cells, -1)
-        y_index = np.asarray(y_index, dtype=np.intp)
-        np.minimum.at(lo, cells, y_index)
-        np.maximum.at(hi, cells, y_index)
-        if np.any(hi > lo):
-            return cells
-    try:
-        return copied_row_cells(X, cells)
-    except (TypeError, ValueError):  # a column whose values cannot be compared
-        return None
+    return cells
 
 
 def copied_row_cells(X: Any, cells: np.ndarray, min_columns: int = 2) -> np.ndarray | None:
@@ -676,6 +696,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         if sample_weight is not None:
             sw = rescale_extreme_weights(check_sample_weight(sample_weight, n), type(self).__name__)
         response = _resolve_response(self.estimator, response or self._heldout_response)
+        # the rows' groups of identical features, hashed once for every cell check below
+        index = feature_cell_index(X, n)
 
         if is_frozen(self.estimator):
             estimator = self.estimator
@@ -714,17 +736,17 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             fold = np.broadcast_to(np.array(-1, dtype=int), (n,))
             n_folds = 0
             classes = est_classes
-            cells = feature_cells(X, sw, y_index)
+            cells = feature_cells(X, sw, y_index, index=index)
         else:
             y_index, classes = check_labels(y_arr, name="y")
             est_params, split_params = self._route_fit_params(
                 sw if sample_weight is not None else None, fit_params
             )
             table = self._table_case_folds(X, y_arr, y_index, classes, sw, est_params,
-                                           split_params)
+                                           split_params, index=index)
             if table is not None:
                 return self._fit_heldout_table(X, y_arr, y_index, classes, sw, est_params,
-                                               response, *table)
+                                               response, *table, index=index)
             splitter = self._make_splitter(y_arr)
             with warnings.catch_warnings():
                 # Tiny classes trigger a warning from StratifiedKFold; they are handled below.
@@ -748,7 +770,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     "`cv` must partition the rows: some rows are in no test fold, so they would "
                     "have no held-out prediction."
                 )
-            cells = feature_cells(X, sw, y_index)
+            cells = feature_cells(X, sw, y_index, index=index)
             if cells is not None:
                 splits, fold = self._splits_keeping_cells(splits, fold, cells, y_index)
             n_folds = len(splits)
@@ -821,7 +843,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             estimator=estimator,
             cells=cells,
             # a count table's cases: the cells its rows repeated by their counts would get
-            case_cells=(feature_cells(X, None, np.asarray(y_index))
+            case_cells=(feature_cells(X, None, np.asarray(y_index), index=index)
                         if sw is not None and whole_counts(sw) is not None else None),
         )
 
@@ -836,7 +858,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
 
     def _table_case_folds(
         self, X: Any, y: np.ndarray, y_index: np.ndarray, classes: np.ndarray,
-        sw: np.ndarray | None, est_params: dict, split_params: dict,
+        sw: np.ndarray | None, est_params: dict, split_params: dict, *,
+        index: Any = _HASH_ROWS,
     ) -> tuple[np.ndarray, np.ndarray] | None:
         """For a count table cross-fitted on ``cv`` folds: ``(counts, fold)``, with ``fold``
         the fold of every case (the rows repeated by their counts, in order), else None (the
@@ -860,7 +883,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         counts = whole_counts(sw)
         if counts is None:
             return None
-        copies = feature_cells(X, None, y_index)
+        copies = feature_cells(X, None, y_index, index=index)
         if copies is not None:
             # the repeated rows' copies of a row (a value found in no other row, as star98's
             # district measurements) would stay in one fold: such a table's cells are the units
@@ -882,7 +905,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
 
     def _fit_heldout_table(
         self, X: Any, y: np.ndarray, y_index: np.ndarray, classes: np.ndarray, sw: np.ndarray,
-        est_params: dict, response: str, counts: np.ndarray, case_fold: np.ndarray,
+        est_params: dict, response: str, counts: np.ndarray, case_fold: np.ndarray, *,
+        index: Any = _HASH_ROWS,
     ) -> HeldOutPredictions:
         """Held-out predictions of a count table cross-fitted by its cases
         (:meth:`_table_case_folds`): fold ``f``'s model is fitted on the rows with the cases
@@ -962,7 +986,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         )
         ho.table_row = row
         ho.row_weight = sw
-        groups = feature_cells(X, sw, y_index)  # (for the check of groups that vary more)
+        groups = feature_cells(X, sw, y_index, index=index)  # (for the check of groups that vary more)
         ho.table_groups = None if groups is None else groups[row]
         return ho
 

@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from ._validation import counted_rows, plain, row_sum
+from ._validation import plain, row_sum, whole_counts
 
 __all__ = ["HeldOutPredictions", "ModelOutputError", "check_model_columns",
            "check_model_probabilities", "resolve_response", "rows_summing_to_one",
@@ -83,7 +83,14 @@ class HeldOutPredictions:
                                weights=np.round(np.asarray(w, dtype=float)) * (
                                    np.asarray(w) > 0),
                                minlength=len(self.classes)).astype(np.int64)
-        return np.bincount(np.asarray(self.y_index, dtype=np.intp), weights=counted_rows(w),
+        y = np.asarray(self.y_index, dtype=np.intp)
+        counts = whole_counts(w)
+        if counts is None and y.size and float(np.min(w)) > 0.0:
+            # every row of positive weight (unit weights above all): one count per row, without
+            # a row-long array of ones (``counted_rows``) and its float copy in np.bincount
+            return np.bincount(y, minlength=len(self.classes)).astype(np.int64)
+        return np.bincount(y, weights=counts if counts is not None else (
+                               np.asarray(w, dtype=float) > 0),
                            minlength=len(self.classes)).astype(np.int64)
 
 

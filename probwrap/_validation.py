@@ -702,7 +702,9 @@ def whole_counts(w: np.ndarray) -> np.ndarray | None:
     True
     """
     w = np.asarray(w, dtype=float)
-    if not w.size or shared_factor(w) != 1 or not float(w.max()) > 1.0:
+    # (the largest weight first: weights of at most 1, unit weights above all, are decided
+    # without shared_factor's row-long temporaries)
+    if not w.size or not float(w.max()) > 1.0 or shared_factor(w) != 1:
         return None
     if np.any(w < 0) or float(w.sum()) > COUNT_TABLE_MAX_CASES:
         return None
