@@ -13,7 +13,7 @@ from sklearn.model_selection import StratifiedKFold
 from sklearn.utils import check_random_state
 
 from ._calibration_shares import ABSENT_CLASS_NOTE, class_shares_losses, smoothed_class_shares
-from ._heldout import HeldOutPredictions, keep_cells_together
+from ._heldout import HeldOutPredictions, case_cells_of, keep_cells_together
 from ._validation import plain
 from ._weights import case_rows
 from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
@@ -280,15 +280,20 @@ def _cases_of(ho: HeldOutPredictions, cases: np.ndarray) -> HeldOutPredictions:
     """``ho``'s rows repeated by their whole-number counts (``cases``: the index of each case,
     :func:`probwrap._weights.case_rows`), each case of weight 1, in its row's fold; the cells
     that keep a choice's folds together are those the repeated rows would get (copies of a
-    row: ``ho.case_cells``), not the table's success and failure rows of one cell."""
+    row: ``ho.case_cells``, counted in cases), not the table's success and failure rows of one
+    cell."""
     copies = getattr(ho, "case_cells", None)
+    if copies is not None:
+        # per row, its cases' cell where the repeated rows are copies of a row, -1 where each
+        # case is a cell of its own (:func:`probwrap._heldout.copied_case_cells`)
+        copies = case_cells_of(copies, cases)
     out = dataclasses.replace(
         ho,
         y_index=np.asarray(ho.y_index)[cases],
         sample_weight=np.ones(cases.shape[0]),
         fold=np.asarray(ho.fold)[cases] if ho.n_folds else np.broadcast_to(
             np.array(-1, dtype=int), (cases.shape[0],)),
-        cells=None if copies is None else np.asarray(copies)[cases],
+        cells=copies,
     )
     # folds given as `cv` (index pairs, a splitter) are folds of the table's rows: each case
     # joins its row's fold (``_selection_folds``)

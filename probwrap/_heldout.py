@@ -428,7 +428,80 @@ def copied_row_cells(X: Any, cells: np.ndarray, min_columns: int = 2) -> np.ndar
     return np.unique(out, return_inverse=True)[1].ravel().astype(np.intp)
 
 
-def _ties_by_chance(X: Any, j: int, counts: np.ndarray) -> bool:
+def copied_case_cells(X: Any, counts: np.ndarray, index: Any = _HASH_ROWS) -> np.ndarray | None:
+    """The cells :func:`copied_row_cells` gives the rows of a count table repeated by their
+    ``counts`` (``np.repeat(X, counts, axis=0)``), read from the table without repeating it:
+    per table row, its cases' cell (one cell for every case of the rows with its features)
+    where the repeated rows are copies of a row, -1 where each of its cases is a cell of its
+    own; None when the repeated rows hold no copies (or ``X`` cannot be hashed).
+
+    A table's rows are usually distinct, so the table itself holds no copies, while its rows
+    repeated do: a continuous value found in no other row, passed as many times as its count.
+    The rule is :func:`copied_row_cells`'s, with every number counted in cases (the rows
+    sharing a value, the pairs of equal values of :func:`_ties_by_chance`), so a table and its
+    rows repeated keep the same cases together (session 27, docs/aggregated_outcomes.md,
+    "Count tables in session 27"). ``index``: :func:`feature_cell_index` of ``X`` when the
+    caller has it (None: every row distinct).
+    """
+    counts = np.asarray(counts, dtype=np.int64).ravel()
+    n = counts.shape[0]
+    if not (hasattr(X, "iloc") and hasattr(X, "columns")) and not (
+            isinstance(X, np.ndarray) and X.ndim == 2 and X.dtype.kind in "biuf"):
+        return None
+    if X.shape[0] != n or X.shape[1] < 2:
+        return None
+    if index is _HASH_ROWS:
+        index = feature_cell_index(X, n)
+    keep = np.flatnonzero(counts > 0)
+    if keep.shape[0] == 0:
+        return None
+    cells = np.arange(n) if index is None else np.asarray(index, dtype=np.intp)
+    cells = np.unique(cells[keep], return_inverse=True)[1].ravel()
+    c = counts[keep].astype(np.float64)
+    size = np.bincount(cells, weights=c)[cells]
+    shared = size >= 2
+    if not shared.any():
+        return None
+    try:
+        if hasattr(X, "iloc"):
+            import pandas as pd
+
+            Xk = X.iloc[keep]
+            columns = [pd.factorize(Xk.iloc[:, j], use_na_sentinel=False)[0]
+                       for j in range(Xk.shape[1])]
+        else:
+            Xk = X[keep]
+            columns = [np.unique(Xk[:, j], return_inverse=True)[1].ravel()
+                       for j in range(Xk.shape[1])]
+        n_distinct = int(cells.max()) + 1
+        exclusive = np.zeros(keep.shape[0], dtype=bool)
+        for j, codes in enumerate(columns):
+            codes = np.asarray(codes, dtype=np.intp)
+            in_cases = np.bincount(codes, weights=c)
+            if 4 * in_cases.shape[0] >= n_distinct and not _ties_by_chance(
+                    Xk, j, in_cases, weights=c):
+                exclusive |= in_cases[codes] == size
+    except (TypeError, ValueError):  # a column whose values cannot be compared
+        return None
+    copies = shared & exclusive
+    if not copies.any():
+        return None
+    out = np.full(n, -1, dtype=np.intp)
+    out[keep[copies]] = np.unique(cells[copies], return_inverse=True)[1].ravel()
+    return out
+
+
+def case_cells_of(copies: np.ndarray, cases: np.ndarray) -> np.ndarray:
+    """Every case's cell from :func:`copied_case_cells`'s ``copies`` (per table row) and
+    ``cases`` (the row of every case): a copied row's cases share their cell, each other case
+    is a cell of its own (numbered 0, 1, ...)."""
+    cells = np.asarray(copies)[cases]
+    cells = np.where(cells < 0, int(cells.max()) + 1 + np.arange(cases.shape[0]), cells)
+    return np.unique(cells, return_inverse=True)[1].ravel().astype(np.intp)
+
+
+def _ties_by_chance(X: Any, j: int, counts: np.ndarray,
+                    weights: np.ndarray | None = None) -> bool:
     """Whether the repeated values of numeric column ``j`` are as many as rows drawn on its grid
     would share by chance, so that a repeated value does not mark a copied row.
 
@@ -441,7 +514,8 @@ def _ties_by_chance(X: Any, j: int, counts: np.ndarray) -> bool:
     them (above ten in 29 of 30 columns; one such column marks the copies); the durations in whole days of lifelines' waltons data (81 rows, 28 values) hold about
     twice as many. Values repeated too evenly for chance (each id of a file passed three times,
     three times) are not chance ties either. Text and categorical columns are never tied by chance here (their values are
-    not on a grid).
+    not on a grid). ``weights``: each row's count of cases (:func:`copied_case_cells`;
+    ``counts`` then counts cases per value), the rows read as repeated by them.
     """
     column = X.iloc[:, j] if hasattr(X, "iloc") else X[:, j]
     try:
@@ -455,7 +529,7 @@ def _ties_by_chance(X: Any, j: int, counts: np.ndarray) -> bool:
         return True
     gaps = np.diff(distinct)
     grid = (distinct[-1] - distinct[0]) / gaps.min() + 1.0
-    n = float(values.shape[0])
+    n = float(values.shape[0]) if weights is None else float(np.sum(weights))
     chance = n * (n - 1.0) / (2.0 * grid)
     pairs = float(np.sum(counts.astype(np.float64) * (counts - 1.0) / 2.0))
     if pairs >= 10.0 * chance:
@@ -843,7 +917,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             estimator=estimator,
             cells=cells,
             # a count table's cases: the cells its rows repeated by their counts would get
-            case_cells=(feature_cells(X, None, np.asarray(y_index), index=index)
+            # (copied_case_cells: -1 for a row whose cases are cells of their own)
+            case_cells=(copied_case_cells(X, whole_counts(sw), index=index)
                         if sw is not None and whole_counts(sw) is not None else None),
         )
 
@@ -867,9 +942,10 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
 
         The cases are split by the wrapper's own splitter (stratified, shuffled with
         ``random_state``) run on the labels of the rows repeated in order, so a table and
-        ``np.repeat`` of its rows get the same folds of cases. Not used where the repeated
-        rows would be copies of a row (:func:`copied_row_cells`: they would be kept in one fold,
-        so the cells are the units either way), when the model takes no ``sample_weight`` (its fold models could not see the counts), with other fit
+        ``np.repeat`` of its rows get the same folds of cases; where the repeated rows would be
+        copies of a row (:func:`copied_case_cells`) a copied row's cases are kept in one fold
+        as :meth:`_splits_keeping_cells` keeps the repeated rows' copies (session 27). Not used
+        when the model takes no ``sample_weight`` (its fold models could not see the counts), with other fit
         parameters or splitter groups, with folds given as ``cv``, or where the wrapper says
         so (:attr:`_split_table_cases`).
         """
@@ -883,12 +959,6 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         counts = whole_counts(sw)
         if counts is None:
             return None
-        copies = feature_cells(X, None, y_index, index=index)
-        if copies is not None:
-            # the repeated rows' copies of a row (a value found in no other row, as star98's
-            # district measurements) would stay in one fold: such a table's cells are the units
-            # of the folds either way, and it keeps its rows as the folds' units (session 26)
-            return None
         cases = np.repeat(np.arange(counts.shape[0]), counts)
         y_cases = y[cases]
         splitter = self._make_splitter(y_cases)
@@ -901,7 +971,17 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         fold = np.empty(cases.shape[0], dtype=np.intp)
         for i, (_, test) in enumerate(splits):
             fold[test] = i
-        return counts, fold
+        copies = copied_case_cells(X, counts, index=index)
+        if copies is not None:
+            # the repeated rows' copies of a row (a value found in no other row: star98's
+            # district measurements, or any continuous feature repeated by its count) are kept
+            # in one fold, as _splits_keeping_cells keeps them for the rows repeated: the same
+            # rule on the same folds of cases, so a table and its repeated rows get the same
+            # folds (before this, such a table kept its rows as the folds' units, session 26,
+            # or, its rows distinct, split a row's cases among the folds)
+            _, fold = self._splits_keeping_cells(splits, fold, case_cells_of(copies, cases),
+                                                 np.asarray(y_index)[cases])
+        return counts, np.asarray(fold, dtype=np.intp)
 
     def _fit_heldout_table(
         self, X: Any, y: np.ndarray, y_index: np.ndarray, classes: np.ndarray, sw: np.ndarray,
@@ -982,7 +1062,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             n_folds=n_folds,
             estimator=estimator,
             cells=None,
-            case_cells=None,  # (no copies: see _table_case_folds)
+            case_cells=None,  # (copied rows' cases share a fold: see _table_case_folds)
         )
         ho.table_row = row
         ho.row_weight = sw
