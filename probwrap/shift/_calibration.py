@@ -195,6 +195,11 @@ def choose_tail(
     if (not n_rows <= TAIL_CHOICE_MAX_ROWS or floor >= start or p.shape[0] != w.shape[0]
             or not np.any(p[rows] < start)):
         return flat
+    from .._validation import whole_counts
+
+    cases = whole_counts(w)
+    if cases is not None:
+        return _choose_tail_cases(p, y_idx, cases, kind, floor, start, flat)
     y_r = y_idx[rows]
     counts = np.bincount(y_r, minlength=p.shape[1])
     if np.any(counts[counts > 0] < 2) or np.count_nonzero(counts) < 2:
@@ -224,6 +229,51 @@ def choose_tail(
     # (d / n both), and a bare ``mean > se`` then followed the last bits of the arithmetic, so
     # the weights' scale chose the tail (R's wooldridge htv, frozen logistic regression, 150
     # labelled rows: weights 1 flat, the same weights 1/150 compressed). A tie keeps the flat floor.
+    return (floor, start, width) if mean > se * (1.0 + _TIE_MARGIN) else flat
+
+
+def _choose_tail_cases(
+    p: np.ndarray, y_idx: np.ndarray, cases: np.ndarray, kind: str, floor: float, start: float,
+    flat: tuple[float, float, float],
+) -> tuple[float, float, float]:
+    """:func:`choose_tail` for a count table (whole-number weights read as cases, docs/
+    weights.md): the folds are folds of CASES, exactly those of the table's cases passed one
+    row each (ordered by class, then row; case ``j`` of that order in fold ``j mod F``), as
+    counts of each row's cases in each fold, never expanding them; the paired difference's
+    mean and standard error are the cases'. Before (session 27), the folds split the table's
+    rows (its cells), and the flat or compressed tail a table chose could differ from its
+    cases' (vcd CoalMiners, naive Bayes, 150 labelled cases: scale 1.00 on the table, 1.36 on
+    the cases; benchmarks/shift_real_hunt27.py)."""
+    rows = np.flatnonzero(cases > 0)
+    c, y_r = cases[rows].astype(np.int64), y_idx[rows]
+    per_class = np.bincount(y_r, weights=c, minlength=p.shape[1])
+    if np.any(per_class[per_class > 0] < 2) or np.count_nonzero(per_class) < 2:
+        return flat
+    total = int(c.sum())
+    n_folds = min(_TAIL_FOLDS, total)
+    order = np.lexsort((rows, y_r))
+    first = np.empty(rows.size, dtype=np.int64)
+    first[order] = np.cumsum(c[order]) - c[order]  # position of each row's first case
+    last = first + c - 1
+    f = np.arange(n_folds)[None, :]
+    # cases of row i in fold f: the positions j in [first, last] with j = f (mod F)
+    in_fold = (last[:, None] - f) // n_folds - (first[:, None] - 1 - f) // n_folds
+    width = abs(float(np.log(start)))
+    losses = np.zeros((2, rows.size, n_folds))
+    for g in range(n_folds):
+        train = c - in_fold[:, g]
+        test = in_fold[:, g] > 0
+        for k_, wd in enumerate((0.0, width)):
+            z_tr = tail_log_scores(p[rows], floor, start, wd)
+            cal = BiasCorrectedScaling(kind=kind).fit_log_proba(
+                z_tr, y_r, train.astype(float), tail=(floor, start, wd))
+            out = cal.predict_output(p[rows][test])
+            losses[k_, test, g] = -np.log(out[np.arange(int(test.sum())), y_r[test]])
+    n = in_fold.astype(float) / total  # each (row, fold) pair's share of the cases
+    d = losses[0] - losses[1]
+    mean = float(np.sum(n * d))
+    se = float(np.sqrt(max(float(np.sum(n * (d - mean) ** 2)), 0.0) * total
+                       / max(total - 1.0, 1.0) / total))
     return (floor, start, width) if mean > se * (1.0 + _TIE_MARGIN) else flat
 
 

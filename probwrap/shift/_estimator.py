@@ -15,7 +15,14 @@ import numpy as np
 from scipy.stats import chi2
 from sklearn.utils import check_random_state
 
-from .._validation import check_labels, check_proba, check_same_length, check_sample_weight, plain
+from .._validation import (
+    check_labels,
+    check_proba,
+    check_same_length,
+    check_sample_weight,
+    plain,
+    whole_counts,
+)
 from ..calibration._base import rescale_extreme_weights
 from ._analytic import (
     all_shares_level,
@@ -131,6 +138,23 @@ def _kish(w: np.ndarray) -> float:
     return float(u.sum() ** 2 / np.dot(u, u))
 
 
+def _table_cases(w: np.ndarray, effective_rows: float | None, cells: Any) -> np.ndarray | None:
+    """The whole-number counts of a count table (:func:`probwrap._validation.whole_counts`:
+    whole numbers, some above 1, no common factor above 1, at most 1e6 cases) read as CASES:
+    the prior-shift estimate, shift test, intervals and few-rows warnings then count its total
+    as rows and the bootstraps draw Poisson(count) cases per row, as for the same cases passed
+    one row each (session 27). None (the relative reading, Kish's effective size) for other
+    weights, when ``effective_rows`` overrides the count (a tally's bins) or with ``cells``
+    (the cells' clustering counts the units instead).
+
+    Before, 1,000 cases on the 16 cells of a table counted as 6 to 37 rows by Kish's size and
+    ``adapt`` never moved (benchmarks/shift_real_hunt27.py: esoph, CoalMiners, Punishment,
+    HairEyeColor)."""
+    if effective_rows or cells is not None:
+        return None
+    return whole_counts(w)
+
+
 def _count_table_hint(w: np.ndarray, n_units: float) -> str:
     """The end of the few-rows warning where the unlabelled weights look like a table of
     counts (whole numbers, some above 1, summing to more than twice the rows counted): they
@@ -141,14 +165,18 @@ def _count_table_hint(w: np.ndarray, n_units: float) -> str:
     w = np.asarray(w, dtype=float)
     if not w.size or not np.all(w == np.round(w)) or not float(w.max()) > 1.0:
         return ""
+    if whole_counts(w) is not None:  # a count table: its cases were counted (since session 27)
+        return ""
     total = float(w.sum())
     if not total > 2.0 * n_units:
         return ""
     return (
-        f" The weights are whole numbers summing to {total:.6g}: adapt reads them as relative "
-        "weights (only their ratios count), not as counts of cases. If each row stands for "
-        "that many independent cases (a table of counts), pass one row per case "
-        "(np.repeat of the rows by their counts) instead."
+        f" The weights are whole numbers summing to {total:.6g} but not a table of counts "
+        "(they share a common factor above 1, or sum to more than 1e6): adapt reads them as "
+        "relative weights (only their ratios count), not as counts of cases. If each row "
+        "stands for that many independent cases, pass the counts without the common factor "
+        "(a count table is read as its cases) or one row per case (np.repeat of the rows by "
+        "their counts) instead."
     )
 
 
@@ -358,6 +386,11 @@ class PriorEstimator(_Resampling):
                                 int(np.unique(self._src_cells[w > 0]).shape[0]))
         self._boot = None
         self.n_classes_ = k
+        # a count table's cases (_table_cases): its total counts as the labelled rows, and
+        # the bootstrap draws Poisson(count) cases of each row (_resample._bootstrap)
+        self._src_cases = _table_cases(w, effective_rows, self._src_cells)
+        if self._src_cases is not None:
+            effective_rows = float(self._src_cases.sum())
         self.n_source_effective_ = float(effective_rows) if effective_rows else _kish(w)
         summary = self._summarise(p, y_idx, w)
         self.calibrator_, self.source_prior_, self.confusion_, self.soft_confusion_ = summary
@@ -694,6 +727,12 @@ class PriorEstimator(_Resampling):
             w = rescale_extreme_weights(w, "PriorEstimator.estimate", stacklevel=3)
         cell_t = check_cells(cells, p_raw.shape[0])
         cell_s = _source_cells(self)
+        # a count table's cases (_table_cases): its total counts as the unlabelled rows (the
+        # pseudo-rows, the shift test, the intervals and the few-rows warning read it) and the
+        # bootstrap draws Poisson(count) cases of each row, as for the cases passed as rows
+        cases_t = _table_cases(w, effective_rows, cell_t)
+        if cases_t is not None:
+            effective_rows = float(cases_t.sum())
         n_eff = float(effective_rows) if effective_rows else _kish(w)
         wk = w * (n_eff / w.sum())  # weights summing to the effective number of rows
         p = self.calibrate(p_raw)
@@ -896,11 +935,11 @@ class PriorEstimator(_Resampling):
                     )
                 if refit is None:
                     bounds, dropped = self._bootstrap(p_raw, w, centre, check_random_state(rs),
-                                                      cells=cell_t)
+                                                      cells=cell_t, cases=cases_t)
                 else:
                     bounds, dropped = self._refit_bootstrap(
                         fold_proba, refit[0], share, w, n_eff, centre, check_random_state(rs),
-                        cells=cell_t)
+                        cells=cell_t, cases=cases_t)
                 if k > 2:  # the same replicates at the per-share level of the joint interval
                     joint = _widen(self._last_all_shares, point.prior, centre, n_floor,
                                    level_all)
@@ -967,7 +1006,8 @@ class PriorEstimator(_Resampling):
             return None
         found = class_mixture_misfit(pe[:, 1], self.calibrate(source[0])[:, 1], source[1],
                                      sample_weight=we, source_sample_weight=source[2],
-                                     effective_rows=n_eff)
+                                     effective_rows=n_eff,
+                                     source_cases=getattr(self, "_src_cases", None))
         if found is None:
             return None
         stat, pvalue, share, bins = found
@@ -1015,7 +1055,7 @@ class PriorEstimator(_Resampling):
     def _refit_bootstrap(
         self, fold_proba: Any, fold_calibrated: np.ndarray, share: np.ndarray, w: np.ndarray,
         n_eff: float, centre: np.ndarray, rng: np.random.RandomState,
-        cells: np.ndarray | None = None,
+        cells: np.ndarray | None = None, cases: np.ndarray | None = None,
     ) -> tuple[np.ndarray, int]:
         """The bootstrap interval of a base model refit on the labelled rows, from the fold
         models' posteriors of the unlabelled rows (``fold_proba``, raw; ``fold_calibrated``,
@@ -1054,7 +1094,8 @@ class PriorEstimator(_Resampling):
                 fold_centre = self._point(
                     p, wk, src, self.confusion_, self.soft_confusion_,
                     n_source=getattr(self, "n_source_effective_", None)).prior
-        return self._bootstrap(raw, stacked_w, fold_centre, rng, copies=copies, cells=cells)
+        return self._bootstrap(raw, stacked_w, fold_centre, rng, copies=copies, cells=cells,
+                               cases=cases)
 
     def _fade_pull(self, point: PriorEstimate, p: np.ndarray, wk: np.ndarray, src: np.ndarray,
                    stat: float | None, pvalue: float | None,

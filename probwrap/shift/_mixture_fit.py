@@ -80,6 +80,7 @@ def class_mixture_misfit(
     sample_weight: np.ndarray | None = None,
     source_sample_weight: np.ndarray | None = None,
     effective_rows: float | None = None,
+    source_cases: np.ndarray | None = None,
     bins: int | None = None,
 ) -> tuple[float, float, float, int] | None:
     """Test whether unlabelled scores follow some mixture of the two labelled classes' scores.
@@ -95,7 +96,13 @@ def class_mixture_misfit(
     sample_weight, source_sample_weight : ndarray, default=None
         Relative weights of either side (their Kish counts are the sample sizes).
     effective_rows : float, default=None
-        Overrides the unlabelled side's Kish count (rows repeated once per fold model).
+        Overrides the unlabelled side's Kish count (rows repeated once per fold model, or a
+        count table's cases).
+    source_cases : ndarray of shape (m,), default=None
+        The labelled side is a count table (since session 27): every row's whole-number count
+        of cases, ``source_sample_weight`` proportional to it. Each class then counts its
+        cases (not Kish's count) and the bin edges are the cases' quantiles, exactly as for
+        the cases passed one row each.
     bins : int, default=None
         Number of bins (at least 3); None: about five effective rows a bin on the smallest of
         the three samples, 3 to 6 bins.
@@ -129,7 +136,9 @@ def class_mixture_misfit(
     w_s = np.ones(s.shape[0]) if source_sample_weight is None else np.asarray(
         source_sample_weight, float)
     n_t = float(effective_rows) if effective_rows else _kish(w_t)
-    n_c = [_kish(w_s[y == c]) for c in (0, 1)]
+    cases = None if source_cases is None else np.asarray(source_cases, dtype=np.int64)
+    n_c = ([float(cases[y == c].sum()) for c in (0, 1)] if cases is not None
+           else [_kish(w_s[y == c]) for c in (0, 1)])
     if min(n_t, *n_c) < MIXTURE_MISFIT_MIN_ROWS:
         return None
     k = _bin_count(min(n_t, *n_c)) if bins is None else int(bins)
@@ -143,9 +152,22 @@ def class_mixture_misfit(
     # knot a last bit off, the edge fell on the other side of a score many rows share, and
     # the scale of the labelled weights moved the p-value across the 1 % level (R's
     # mosaicData Galton, naive Bayes, 150 labelled rows: 0.0089 at weights 1, 0.0103 at 1/150)
-    u = w_s[order] / w_s.max()
-    cum = np.round(np.cumsum(u) / u.sum(), 12)
-    edges = np.interp(np.round(np.arange(1, k) / k, 12), cum, s[order])
+    if cases is None:
+        u = w_s[order] / w_s.max()
+        cum = np.round(np.cumsum(u) / u.sum(), 12)
+        knots = s[order]
+    else:
+        # a count table: the knots of its cases one row each (the first and the last case
+        # of every row; the cases between share its score and add no knot), so the edges
+        # are those of the cases as rows
+        c_o = cases[order]
+        pos = c_o > 0
+        after = np.cumsum(c_o)[pos]
+        total = float(after[-1])
+        first = after - c_o[pos] + 1
+        cum = np.round(np.column_stack([first, after]).ravel() / total, 12)
+        knots = np.repeat(s[order][pos], 2)
+    edges = np.interp(np.round(np.arange(1, k) / k, 12), cum, knots)
     h = np.bincount(np.searchsorted(edges, t), weights=w_t, minlength=k) / w_t.sum()
     b_s = np.searchsorted(edges, s)
     a, cov = [], []

@@ -212,8 +212,15 @@ class _Resampling:
         rng: np.random.RandomState,
         copies: int = 1,
         cells: np.ndarray | None = None,
+        cases: np.ndarray | None = None,
     ) -> tuple[np.ndarray, int]:
         """Bootstrap interval around ``centre`` from ``n_resamples`` Poisson resamples.
+
+        ``cases`` (the whole-number counts of an unlabelled count table, one per row) and the
+        labelled table's counts kept by ``fit`` (``_src_cases``): a row standing for ``c``
+        cases holds Poisson(``c``) cases of a resample, as ``c`` rows of weight 1 drawn
+        Poisson(1) times each would (since session 27; before, Poisson(1) copies of the row),
+        and the jackknife leaves out groups of cases (:meth:`_jackknife`).
 
         ``cells`` (codes ``0 .. G - 1`` of the unlabelled rows), and the labelled rows' cells
         given to ``fit``: every row of a cell gets its cell's Poisson count, so whole cells
@@ -236,7 +243,12 @@ class _Resampling:
         gen = np.random.default_rng(rng.randint(2**31 - 1))
         rows = self._source_row_counts() if resample_source else None
         src_cells = getattr(self, "_src_cells", None) if resample_source else None
-        if rows is None and src_cells is not None:
+        src_cases = getattr(self, "_src_cases", None) if resample_source else None
+        if rows is None and src_cells is None and src_cases is not None:
+            # a labelled count table: a row of c cases holds Poisson(c) cases of a resample
+            src_counts = gen.poisson(src_cases, size=(B, ws.shape[0]))
+            unit = np.divide(ws, src_cases, out=np.zeros_like(ws), where=src_cases > 0)
+        elif rows is None and src_cells is not None:
             # whole labelled cells: one Poisson count per cell, shared by its rows
             src_counts = gen.poisson(1.0, size=(B, int(src_cells.max()) + 1))[:, src_cells]
             unit = ws
@@ -247,7 +259,10 @@ class _Resampling:
             # tallied labelled rows: a bin of c rows holds Poisson(c) rows of a resample
             src_counts = gen.poisson(rows, size=(B, ws.shape[0]))
             unit = ws / rows
-        if cells is None:
+        if cases is not None and cells is None:
+            # an unlabelled count table: Poisson(c) cases of a row of c cases
+            tgt_counts = gen.poisson(cases, size=(B, n)) / np.where(cases > 0, cases, 1)
+        elif cells is None:
             tgt_counts = gen.poisson(1.0, size=(B, n))
         else:
             tgt_counts = gen.poisson(1.0, size=(B, int(cells.max()) + 1))[:, cells]
@@ -263,7 +278,10 @@ class _Resampling:
         jack = None
         if self.interval == "bca" and draws.shape[0] > 0:
             jack = self._jackknife(p_raw, w, centre, ws, rng, copies,
-                                   cells=(cells, src_cells))
+                                   cells=(cells, src_cells),
+                                   cases=(None if cells is not None else cases,
+                                          None if src_cells is not None or rows is not None
+                                          else src_cases))
         bounds = _interval_from_draws(
             centre, draws, jack, self.confidence_level, dropped, B, k,
         )
@@ -289,29 +307,60 @@ class _Resampling:
         rng: np.random.RandomState,
         copies: int = 1,
         cells: tuple = (None, None),
+        cases: tuple = (None, None),
     ) -> list[np.ndarray]:
         """Leave-one-group-out estimates per sample (target rows; labelled rows when resampled);
         with ``copies`` > 1 (see :meth:`_bootstrap`) a target row's copies share its group, and
-        with ``cells`` (target, labelled cell codes or None) a cell's rows share theirs."""
+        with ``cells`` (target, labelled cell codes or None) a cell's rows share theirs. With
+        ``cases`` (target, labelled whole-number counts of a count table, or None) the groups
+        are of cases: the cases are dealt to the groups at random (each group gets about its
+        share of every row's count; the cases themselves are not expanded), and leaving a group
+        out removes its cases from every row."""
         out = []
         samples = [("target", w)] + ([("source", ws)] if ws is not None else [])
         for name, weights in samples:
             times = int(copies) if name == "target" else 1
             n = weights.shape[0] // times
             codes = cells[0] if name == "target" else cells[1]
-            units = n if codes is None else int(codes.max()) + 1
-            groups = min(JACKKNIFE_GROUPS, units)
-            if groups < 2:
-                continue
-            label = np.empty(units, dtype=int)
-            label[rng.permutation(units)] = np.arange(units) % groups
-            if codes is not None:
-                label = label[codes]
-            if times > 1:
-                label = np.tile(label, times)
+            counts = cases[0] if name == "target" else cases[1]
+            if counts is not None and codes is None:
+                total = int(counts.sum())
+                groups = min(JACKKNIFE_GROUPS, total)
+                if groups < 2:
+                    continue
+                # the cases dealt at random to groups of (nearly) equal size, as the rows'
+                # groups are: each group's cases drawn without replacement from those left
+                # (multivariate hypergeometric), per row, never expanding the cases
+                gen = np.random.default_rng(rng.randint(2**31 - 1))
+                left = counts.astype(np.int64)
+                split = np.zeros((groups, n), dtype=np.int64)
+                for g in range(groups - 1):
+                    size = (total - g + groups - 1) // groups  # cases of group g
+                    split[g] = gen.multivariate_hypergeometric(left, size)
+                    left = left - split[g]
+                split[groups - 1] = left
+                per_case = np.divide(weights, np.tile(counts, times).astype(float),
+                                     out=np.zeros(weights.shape[0]),
+                                     where=np.tile(counts, times) > 0)
+                drop = [np.tile(split[g], times) * per_case for g in range(groups)]
+            else:
+                units = n if codes is None else int(codes.max()) + 1
+                groups = min(JACKKNIFE_GROUPS, units)
+                if groups < 2:
+                    continue
+                label = np.empty(units, dtype=int)
+                label[rng.permutation(units)] = np.arange(units) % groups
+                if codes is not None:
+                    label = label[codes]
+                if times > 1:
+                    label = np.tile(label, times)
+                drop = None
             values = []
             for g in range(groups):
-                keep = np.where(label == g, 0.0, weights)
+                if drop is not None:
+                    keep = weights - drop[g]
+                else:
+                    keep = np.where(label == g, 0.0, weights)
                 if name == "target":
                     v_s, v_t = ws, keep
                 else:
