@@ -27,8 +27,14 @@ def _tally_rows(tally: Any) -> float:
     """Effective number of the rows behind a tally (its bins' weights are counts of rows).
 
     Kish's count when the tally knows the sum of squared weights, otherwise its total weight
-    (exact for unit weights).
+    (exact for unit weights). The rows of a count table (whole-number weights without a common
+    factor, :func:`probwrap.scale._dask.tally_is_count_table`) count their cases, the total
+    weight, as the same table in memory does (since session 27; before, Kish's count).
     """
+    from .scale._dask import tally_is_count_table
+
+    if getattr(tally, "weighted_rows_by_label", None) is not None and tally_is_count_table(tally):
+        return float(tally.total_weight)
     rows = tally.effective_rows
     return float(rows) if np.isfinite(rows) else float(tally.total_weight)
 

@@ -197,3 +197,59 @@ def test_tail_choice_folds_cases_not_cells(miners):
     psw_t = PriorShiftWrapper(FrozenEstimator(nb)).fit(Xl, yl, sample_weight=L)
     psw_r = PriorShiftWrapper(FrozenEstimator(nb)).fit(np.repeat(Xl, L, axis=0), np.repeat(yl, L))
     np.testing.assert_allclose(psw_t.calibrator_.scale_, psw_r.calibrator_.scale_, rtol=1e-9)
+
+
+def test_dask_tally_reads_a_count_table_as_in_memory(tally_path):
+    """A count table adapted from Dask rows through their tally (forced by ``tally_path``)
+    counts its cases, as in memory: the same estimate, score interval and shift test (the
+    tally bins the scores: to about 1e-6). Before, the tally counted Kish's size of the rows
+    while memory now counts the cases, and the intervals differed."""
+    da = pytest.importorskip("dask.array")
+    from scipy.special import expit
+
+    rng = np.random.default_rng(3)
+    beta = np.array([1.0, -0.7, 0.4])
+    X = rng.normal(size=(3000, 3))
+    y = (rng.random(3000) < expit(1.5 * (X @ beta - 1.0))).astype(int)
+    w = rng.integers(1, 7, size=3000).astype(float)  # a parcel table: each cell seen 1-6 times
+    Xf = rng.normal(size=(3000, 3))
+    model = FrozenEstimator(LogisticRegression().fit(
+        Xf, (rng.random(3000) < expit(Xf @ beta - 1.0)).astype(int)))
+    Xu = rng.normal(size=(2500, 3))
+    wu = rng.integers(1, 5, size=2500).astype(float)
+    out = []
+    for dask in (False, True):
+        m = PriorShiftWrapper(model, random_state=0)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            if dask:
+                m.fit(da.from_array(X, chunks=(1000, 3)), da.from_array(y, chunks=1000),
+                      sample_weight=da.from_array(w, chunks=1000))
+                m.adapt(da.from_array(Xu, chunks=(1000, 3)),
+                        sample_weight=da.from_array(wu, chunks=1000))
+            else:
+                m.fit(X, y, sample_weight=w)
+                m.adapt(Xu, sample_weight=wu)
+        out.append((m.target_prior_, np.asarray(m.target_prior_interval_), m.shift_pvalue_))
+    np.testing.assert_allclose(out[1][0], out[0][0], atol=1e-6)
+    np.testing.assert_allclose(out[1][1], out[0][1], atol=1e-6)
+    assert out[1][2] == pytest.approx(out[0][2], abs=1e-5)
+    assert np.ptp(out[0][1][1]) < 0.05  # 7,500 unlabelled cases (before: Kish's 2,143 rows)
+
+
+def test_cross_fitted_estimator_keeps_kish_reading():
+    """With the labelled rows' folds of a cross-fitted model (``source_fold``) the table keeps
+    the relative reading on both sides (its folds split rows, not cases; counting the cases
+    harmed on R's HairEyeColor in benchmarks/shift_real_hunt27.py), and the few-rows warning
+    says why and how to count the cases."""
+    P, Ps, ys, ws, wt = _cells_table()
+    wt = wt.copy()
+    wt[0] += 300.0  # a lopsided table: Kish's size under the few-rows bound
+    est = PriorEstimator(random_state=0).fit(Ps, ys, ws, source_fold=np.arange(ys.size) % 2)
+    assert est.n_source_effective_ == pytest.approx(ws.sum() ** 2 / np.dot(ws, ws))
+    with warnings.catch_warnings(record=True) as rec:
+        warnings.simplefilter("always")
+        est.estimate(P, wt)
+    kish = wt.sum() ** 2 / np.dot(wt, wt)
+    msg = [str(w.message) for w in rec if "effective unlabelled rows" in str(w.message)]
+    assert len(msg) == 1 and f"Only {kish:.3g}" in msg[0] and "cross-fitted" in msg[0]
