@@ -253,3 +253,43 @@ def test_cross_fitted_estimator_keeps_kish_reading():
     kish = wt.sum() ** 2 / np.dot(wt, wt)
     msg = [str(w.message) for w in rec if "effective unlabelled rows" in str(w.message)]
     assert len(msg) == 1 and f"Only {kish:.3g}" in msg[0] and "cross-fitted" in msg[0]
+
+
+def test_dask_multiclass_reductions_read_a_count_table_as_in_memory(tally_path):
+    """Three classes from Dask rows through the reductions (forced by ``tally_path``): a
+    labelled and an unlabelled count table count their cases, as in memory (the reductions
+    carry the weights' shared whole factor; before, Kish's count on Dask only)."""
+    da = pytest.importorskip("dask.array")
+    rng = np.random.default_rng(21)
+    means = np.array([[0.0, 0.0], [1.5, 0.3], [0.4, 1.6]])
+
+    def draw(n, prior):
+        y = rng.choice(3, size=n, p=prior)
+        return rng.normal(size=(n, 2)) + 1.5 * means[y], y
+
+    X_tr, y_tr = draw(3000, [0.5, 0.3, 0.2])
+    model = FrozenEstimator(LogisticRegression().fit(X_tr, y_tr))
+    X, y = draw(900, [0.5, 0.3, 0.2])
+    X_new, _ = draw(3000, [0.3, 0.3, 0.4])
+    w = rng.integers(0, 3, size=900).astype(float)
+    wu = rng.integers(1, 4, size=3000).astype(float)
+    out = []
+    for dask in (False, True):
+        m = PriorShiftWrapper(model)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            if dask:
+                m.fit(da.from_array(X, chunks=(300, 2)), da.from_array(y, chunks=300),
+                      sample_weight=da.from_array(w, chunks=300))
+                m.adapt(da.from_array(X_new, chunks=(1000, 2)),
+                        sample_weight=da.from_array(wu, chunks=1000))
+            else:
+                m.fit(X, y, sample_weight=w)
+                m.adapt(X_new, sample_weight=wu)
+        out.append(m)
+    assert out[0].prior_estimator_.n_source_effective_ == w.sum()
+    assert out[1].prior_estimator_.n_source_effective_ == w.sum()
+    np.testing.assert_allclose(out[1].target_prior_, out[0].target_prior_, atol=1e-6)
+    np.testing.assert_allclose(np.asarray(out[1].target_prior_interval_),
+                               np.asarray(out[0].target_prior_interval_), atol=1e-5)
+    assert out[1].shift_pvalue_ == pytest.approx(out[0].shift_pvalue_, rel=1e-4, abs=1e-12)

@@ -44,7 +44,7 @@ from ._blocks import (
     predict_block,
 )
 from ._dask import _frozen_multiclass
-from ._multiclass_wrappers import _Smallest
+from ._multiclass_wrappers import _SharedFactor, _Smallest
 from ._rows import _ScaledBlocks, in_weight_unit, rows_of
 from ._tally import ZERO_WEIGHT, kept_rows_limit, warn_weight_unit
 
@@ -150,7 +150,7 @@ def _counts(block, k):
     return (np.bincount(y, weights=w, minlength=k), float(np.dot(w, w)),
             float(np.count_nonzero(w)),
             _Smallest(float(positive.min()) if positive.size else np.inf),
-            *class_rows(y, w, k))
+            *class_rows(y, w, k), _SharedFactor.of(w))
 
 
 def _scaling_terms(block, theta, n_scale, k, total, clip):
@@ -247,9 +247,8 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     try:
         # weights beyond about 1e+-77 divided by a power of two, as in memory
         parts, unit = in_weight_unit(parts, sample_weight is not None)
-        class_weight, squared_weight, positive_rows, smallest, rows, weighted = parts.reduce(
-            _counts, k
-        )
+        class_weight, squared_weight, positive_rows, smallest, rows, weighted, factor = (
+            parts.reduce(_counts, k))
         total = float(class_weight.sum())
         if total <= 0:
             raise ValueError(ZERO_WEIGHT)
@@ -356,6 +355,14 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
     est._source_log_loss = float(np.asarray(loss_sum).ravel()[0]) / total
     est._src = None
     est.n_source_effective_ = total**2 / squared_weight
+    from .._validation import COUNT_TABLE_MAX_CASES
+
+    cases = (unit == 1.0 and factor.value == 1 and total > positive_rows
+             and total <= COUNT_TABLE_MAX_CASES)
+    if cases:
+        # a count table (whole numbers, no common factor above 1, some above 1): its cases, as
+        # in memory (probwrap.shift._estimator._table_cases; since session 27)
+        est.n_source_effective_ = float(total)
     if eta_sums is not None:
         from ..shift._analytic import labelled_cov_from_sums
 
@@ -367,11 +374,16 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
         # per-class sums the shift test's labelled side reads
         from ..shift._analytic import class_score_moments
 
-        est._class_scores = class_score_moments((su, suu, sw, sww))
+        est._class_scores = class_score_moments((su, suu, sw, sww),
+                                                est.n_source_effective_ if cases else None)
     # the labelled side of the two-sample shift test, as in memory: the plain mean of the
     # scores and its variance (probwrap.shift._shift_tests._source_moments without classes)
     est._source_score = _source_moments_from_sums(su.sum(axis=0), suu.sum(axis=0),
                                                   float(sw.sum()), float(sww.sum()))
+    if cases:  # the count table's cases, as in memory (_source_moments with n_eff)
+        mean_s, ((cov_s, n_s),) = est._source_score
+        est._source_score = (mean_s, ((cov_s * max(n_s - 1.0, 1.0) / max(total - 1.0, 1.0),
+                                       float(total)),))
     _set_fitted(owner, estimator, classes)
     return est
 
@@ -491,7 +503,8 @@ def _means(block, k):
     hard = w @ np.eye(k)[np.argmax(p, axis=1)]
     with np.errstate(divide="ignore", invalid="ignore"):
         entropy = float(w @ -np.where(p > 0, p * np.log(p), 0.0).sum(axis=1))
-    return w @ p, hard, np.array([w.sum(), float(np.dot(w, w)), p.shape[0], entropy])
+    return (w @ p, hard, np.array([w.sum(), float(np.dot(w, w)), p.shape[0], entropy,
+                                   float(np.count_nonzero(w > 0))]), _SharedFactor.of(w))
 
 
 def _em_dask(parts, src, init, total, tol, max_iter, pseudo=None, scale=1.0):
@@ -616,7 +629,8 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
     try:
         # weights beyond about 1e+-77 divided by a power of two, as in memory
         parts, unit = in_weight_unit(parts, sample_weight is not None)
-        soft_mean, hard_mean, (total, squared, n_rows, entropy) = parts.reduce(_means, k)
+        soft_mean, hard_mean, (total, squared, n_rows, entropy, positive), factor = (
+            parts.reduce(_means, k))
         if total <= 0:
             raise ValueError(ZERO_WEIGHT)
         warn_weight_unit(unit, "PriorShiftWrapper.adapt", total, stacklevel=5)
@@ -646,6 +660,14 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
         method = est.method
         n_iter, converged, distance = 0, True, 0.0
         n_eff = total**2 / squared
+        from .._validation import COUNT_TABLE_MAX_CASES
+
+        if (sample_weight is not None and unit == 1.0 and factor.value == 1
+                and total > positive and total <= COUNT_TABLE_MAX_CASES
+                and getattr(est, "_src_fold", None) is None):
+            # a count table (whole numbers, no common factor above 1, some above 1): its
+            # cases, as in memory (probwrap.shift._estimator._table_cases; since session 27)
+            n_eff = float(total)
         su, suu = parts.reduce(_score_sums, None, src)
         # the harm scale reads the posteriors that predict: the refit model's here
         harm_sums = (soft_mean, suu, entropy)
@@ -664,7 +686,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
                                    refit[0])
             extra.append(stacked)
             e_parts = stacked if unit == 1.0 else _ScaledBlocks(stacked, unit)
-            e_soft, e_hard, (e_total, _, _, _) = e_parts.reduce(_means, k)
+            e_soft, e_hard, (e_total, _, _, _, _), _ = e_parts.reduce(_means, k)
             e_su, e_suu = e_parts.reduce(_score_sums, None, src)
             averaged = bool(getattr(est, "_fold_point", False))
             # the shift test's (and the class-moment interval's) unlabelled side: the scores

@@ -54,6 +54,30 @@ class _Smallest:
         return _Smallest(min(self.value, other.value))
 
 
+class _SharedFactor:
+    """A block result whose "sum" is the greatest common divisor of the blocks' positive
+    weights (0: no positive weight; -1: some positive weight is not a whole number), so the
+    reduction knows whether the rows carry a count table's weights
+    (:func:`probwrap._validation.shared_factor` over all rows)."""
+
+    def __init__(self, value: int) -> None:
+        self.value = int(value)
+
+    @classmethod
+    def of(cls, w: np.ndarray) -> _SharedFactor:
+        from .._validation import shared_factor
+
+        if not np.any(np.asarray(w) > 0):
+            return cls(0)
+        factor = shared_factor(w)
+        return cls(-1 if factor is None else factor)
+
+    def __add__(self, other: _SharedFactor) -> _SharedFactor:
+        if self.value < 0 or other.value < 0:
+            return _SharedFactor(-1)
+        return _SharedFactor(int(np.gcd(self.value, other.value)))
+
+
 class _Capped:
     """A block's model outputs, label indices and weights, concatenated in block order by
     ``+`` while the rows number at most KEPT_ROWS (beyond: only the count and the smallest

@@ -83,7 +83,11 @@ class _Resampling:
         mean = np.where(edge == 0, -np.inf, np.where(edge == max_bins + 2, np.inf, mean))
         proba = np.column_stack([expit(-mean), expit(mean)])
         self._src = (proba, (uniq % 2).astype(int), total)
-        self._src_rows = total * total / square
+        # a labelled count table (_src_cases): a bin holds its total of cases (not Kish's
+        # count of its rows); the per-row counts no longer match the bins
+        cases = getattr(self, "_src_cases", None)
+        self._src_rows = total.copy() if cases is not None else total * total / square
+        self._src_cases = None
         self._src_fold = None  # bins mix the folds' rows
         self._boot = None
 
