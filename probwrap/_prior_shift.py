@@ -1106,13 +1106,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         X : array-like, DataFrame, sparse matrix, ...
             Unlabelled rows from the deployment population, in the estimator's input format.
         sample_weight : array-like of shape (n,), default=None
-            Relative weights of the rows: only their ratios matter. The rows are weighed by
-            them, and the evidence they carry (the shrinkage toward the source prior, the shift
-            test, the interval) is counted as Kish's effective number of rows,
-            (sum w)^2 / sum w^2, so multiplying every weight by a constant changes nothing and
-            integer weights are not read as duplicated rows (pass the rows duplicated if they
-            really are independent copies; see
-            docs/prior_shift.md, "How sure is the estimate, and has anything moved?").
+            A count table (whole numbers without a common factor above 1, some above 1, at
+            most 1e6 cases: one row per cell, weighted by its cases) counts its cases, as the
+            rows repeated by their counts would (the shrinkage toward the source prior, the
+            shift test, the interval and the few-rows warnings read the total; the bootstrap
+            draws Poisson(count) cases of each row; since session 27, not with ``cells`` nor
+            for a model cross-fitted here). Any other weights are relative: only their ratios
+            matter, the evidence counted as Kish's effective number of rows,
+            (sum w)^2 / sum w^2, so multiplying every weight by a constant changes nothing
+            (docs/weights.md; docs/prior_shift.md, "How sure is the estimate, and has anything
+            moved?" and "Count tables in adapt (session 27)").
         cells : array-like of shape (n,), default=None
             The cell of every row (rows of one aggregated group share one): the shift test and
             the interval then count each cell as one unit, as ``fit(cells=...)`` does for the

@@ -365,9 +365,12 @@ class PriorEstimator(_Resampling):
         cells (:mod:`probwrap.shift._cells`) and the bootstrap draws whole cells.
 
         ``sample_weight``: the source shares, confusion matrices, shift test and intervals read
-        only their ratios (Kish's effective size), but the calibration (``calibration`` not
-        None) reads them by the calibration maps' rule (docs/weights.md): row counts when they
-        sum to at least the number of rows, otherwise relative. A
+        only their ratios (Kish's effective size), except a count table (whole numbers, no
+        common factor above 1, some above 1, at most 1e6 cases; without ``cells`` and
+        ``source_fold``), whose cases count (since session 27: the effective size is the
+        total, the bootstrap draws Poisson(count) cases of each row); the calibration
+        (``calibration`` not None) reads them by the calibration maps' rule (docs/weights.md):
+        row counts when they sum to at least the number of rows, otherwise relative. A
         :class:`~probwrap.calibration.WeightScaleWarning` (once) says when that reading moves
         with their scale, as ``PriorShiftWrapper.fit`` says for the same calibration (since
         4 December 2026; ``effective_rows``, a tally's counts, is not warned about).
@@ -667,8 +670,12 @@ class PriorEstimator(_Resampling):
         proba : array-like of shape (n, k)
             Posteriors of the unlabelled rows from the same model as the held-out ones.
         sample_weight : array-like of shape (n,), default=None
-            Frequency weights of the unlabelled rows. Only their relative sizes matter:
-            counts use Kish's effective sample size ``(sum w)^2 / sum w^2``.
+            Frequency weights of the unlabelled rows. A count table (whole numbers, no common
+            factor above 1, some above 1, at most 1e6 cases) counts its cases: its total is the
+            effective number of rows and the bootstrap draws Poisson(count) cases of each row,
+            as for the cases passed one row each (since session 27; not with ``cells``, nor for
+            an estimator fitted with ``source_fold``). Other weights: only their relative sizes
+            matter, counted as Kish's effective sample size ``(sum w)^2 / sum w^2``.
         random_state : int, RandomState or None, default=None
             Overrides the estimator's ``random_state`` for this call.
         effective_rows : float, default=None
