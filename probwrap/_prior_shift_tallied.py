@@ -31,7 +31,7 @@ def _tally_rows(tally: Any) -> float:
     factor, :func:`probwrap.scale._dask.tally_is_count_table`) count their cases, the total
     weight, as the same table in memory does (since session 27; before, Kish's count).
     """
-    from .scale._dask import tally_is_count_table
+    from .scale._entry import tally_is_count_table
 
     if getattr(tally, "weighted_rows_by_label", None) is not None and tally_is_count_table(tally):
         return float(tally.total_weight)

@@ -18,7 +18,7 @@ from typing import Any
 from . import _dask, _multiclass, _multiclass_wrappers, _rows
 from ._bootstrap import tally_cutoff_interval, tally_exact_interval, tally_prior_interval
 from ._build import tally_scores
-from ._dask import owner_resolution, warn_batch_repeats
+from ._dask import owner_resolution, tally_is_count_table, warn_batch_repeats
 from ._rows import rows_of
 from ._tally import _check_resolution as check_resolution
 from ._tally import replicate_seed
@@ -38,6 +38,7 @@ __all__ = [
     "replicate_seed",
     "tally_cutoff_interval",
     "tally_exact_interval",
+    "tally_is_count_table",
     "tally_prior_interval",
     "tally_scores",
     "unlabelled_proba_from_dask",
