@@ -1071,7 +1071,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         return ho
 
     def _warn_overdispersed_table(self, ho: HeldOutPredictions, p: np.ndarray | None,
-                                  what: str) -> None:
+                                  what: str, *, stacklevel: int = 5,
+                                  remedy: str | None = None) -> None:
         """Warn when a binary count table read as cases (a frozen model's, or one
         cross-fitted by its cases) has groups of identical features that vary more than
         binomial around the held-out probabilities ``p`` (of the second class)
@@ -1088,7 +1089,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         else:
             return
         warn_overdispersed_table(p, ho.y_index, ho.sample_weight, groups, type(self).__name__,
-                                 what, stacklevel=5)
+                                 what, stacklevel=stacklevel, remedy=remedy)
 
     def _splits_keeping_cells(
         self, splits: list, fold: np.ndarray, cells: np.ndarray, y_index: np.ndarray

@@ -638,7 +638,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             units whose members share causes (school districts, routes and weeks); a frequency
             table of independent people (covariate patterns) is better passed as repeated
             rows. None: every row is its own unit (cells are never found on their own here,
-            though the folds keep such rows together).
+            though the folds keep such rows together); a two-class count table then read as
+            its cases (a frozen model) whose groups vary more than binomial draws a
+            ``UserWarning`` (docs/prior_shift.md, "Count tables in adapt (session 27)").
         **fit_params : dict
             Further parameters for the estimator's ``fit``.
 
@@ -715,6 +717,20 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 class_names=self.classes_, source_fold=ho.fold if refit else None,
                 cells=_count_cells(cells, ho),
                 _weight_owner=None)  # (said in this wrapper's words: _warn_weight_reading)
+        if est._src_cases is not None and ho.values.ndim == 2 and ho.values.shape[1] == 2:
+            # a two-class count table read as its cases (a frozen model, no `cells`): adapt's
+            # interval and shift test count every case as independent, too sure where the
+            # cases of a group share causes (star98's pupils of a district: 0.075 times the
+            # districts' clustered width); the check of CalibrationWrapper(auto) and the
+            # tuned cutoff on the same held-out probabilities (session 27)
+            self._warn_overdispersed_table(
+                ho, ho.values[:, 1], "`adapt`'s interval and shift test",
+                stacklevel=4,
+                remedy="If so, pass `cells=` to fit (the groups as the units of the interval "
+                       "and the shift test: the clustered reading; PriorShiftWrapper.fit's "
+                       "docstring, docs/prior_shift.md \"Counts (k of n)\") or the weights "
+                       "divided by their sum (the relative reading: the table's rows count by "
+                       "Kish's effective size).")
         if ho.n_folds >= 2 and est.calibrator_ is not None:
             # A base model refit here: the likelihood-ratio test judged the fold models'
             # held-out probabilities, not the refit model's that predict_proba would return,

@@ -190,12 +190,13 @@ def table_dispersion(
 
 def warn_overdispersed_table(
     p: np.ndarray, y: np.ndarray, w: np.ndarray, groups: np.ndarray | None, owner: str,
-    what: str, *, stacklevel: int = 4,
+    what: str, *, stacklevel: int = 4, remedy: str | None = None,
 ) -> float | None:
     """Warn (``UserWarning`` naming ``owner``) when a count table read as cases has groups
     that vary more than binomial (:func:`table_dispersion` above
     :data:`OVERDISPERSION_LIMIT`, p below :data:`OVERDISPERSION_PVALUE`): ``what`` (the
-    steps that count its cases) is then too sure. Returns the dispersion (None when not
+    steps that count its cases) is then too sure. ``remedy``: the warning's last sentence
+    (None: pass the weights divided by their sum). Returns the dispersion (None when not
     judged)."""
     if groups is None:
         return None
@@ -210,9 +211,11 @@ def warn_overdispersed_table(
             f"{dispersion:.3g}, p = {pvalue:.2g}). Either the model misses what sets the "
             "groups apart, or the cases of a group share causes (pupils of one school, parcels "
             f"of one route); then every case counts as independent evidence in {what}, about "
-            f"{dispersion:.3g} times too much. If so, pass the weights divided by their sum, "
-            "so that the table's rows count by Kish's effective size (docs/aggregated_outcomes"
-            ".md, \"When groups vary more than binomial\").",
+            f"{dispersion:.3g} times too much. "
+            + (remedy if remedy is not None else
+               "If so, pass the weights divided by their sum, so that the table's rows count "
+               "by Kish's effective size (docs/aggregated_outcomes.md, \"When groups vary more "
+               "than binomial\")."),
             UserWarning,
             stacklevel=stacklevel,
         )
