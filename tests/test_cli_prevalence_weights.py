@@ -109,8 +109,10 @@ def test_source_weights_are_the_library_and_repeated_rows(files, capsys):
                            options={"xatol": 1e-12})
     assert weighted["shift_statistic"] == pytest.approx(2 * (loglik(best.x) - loglik(0.3)),
                                                         rel=1e-6)
+    # (with --source-prevalence even a count table is relative: "cases" is null)
     assert weighted["weights"] == {"column": "freq", "sum": float(w.sum()),
-                                   "effective_rows": pytest.approx(w.sum() ** 2 / (w @ w))}
+                                   "effective_rows": pytest.approx(w.sum() ** 2 / (w @ w)),
+                                   "cases": None}
     # the interval contains the Clopper-Pearson interval of Kish's effective rows
     from probwrap.shift import binomial_interval
 
@@ -127,8 +129,15 @@ def test_scaling_the_weights_changes_nothing(files, capsys):
         for key in ("prevalence", "shift_statistic", "shift_pvalue"):
             assert scaled[key] == pytest.approx(base[key], rel=1e-9), (column, key)
         assert scaled["interval"] == pytest.approx(base["interval"], rel=1e-9), column
-    base, _ = _reference(capsys, root, root / "new.csv", "--weight-column", "freq",
-                         "--reference-weight-column", "freq")
+    # with --reference, scaled weights (x1000, normalised) read alike; the unscaled ftv + 1 is
+    # a count table, read as its cases like the library (test_cli_prevalence_count_table.py)
+    code, out, err = run(capsys, "prevalence", "--unlabelled", root / "scaled.csv",
+                         "--score-column", "risk", "--reference", root / "ref_scaled.csv",
+                         "--label-column", "low", "--resamples", 30, "--format", "json",
+                         "--weight-column", "freq", "--reference-weight-column", "big")
+    assert code == 0, err
+    base = json.loads(out)
+    assert base["weights"]["cases"] is None  # x1000: a common factor, relative
     code, out, err = run(capsys, "prevalence", "--unlabelled", root / "scaled.csv",
                          "--score-column", "risk", "--reference", root / "ref_scaled.csv",
                          "--label-column", "low", "--resamples", 30, "--format", "json",
@@ -146,15 +155,14 @@ def test_reference_weights_are_the_library(files, capsys):
     root, ref, new = files
     out, err = _reference(capsys, root, root / "new.csv", "--weight-column", "freq",
                           "--reference-weight-column", "freq")
-    # the command passes the weights rescaled to sum to Kish's effective size (their ratios
-    # kept), so that only the ratios matter also in the reference rows' recalibration
-    def kish(w):
-        w = w.to_numpy(float)
-        return w * w.sum() / (w @ w)
-
+    # ftv + 1 (whole numbers 1-4, no common factor) is a count table: the command passes it
+    # unchanged, so the estimator counts its cases as it does in Python (since session 27;
+    # scaled weights are rescaled to Kish's size, test_scaling_the_weights_changes_nothing)
     est = PriorEstimator("em", calibration="bcts", n_resamples=30, random_state=0).fit(
-        np.column_stack([1 - ref.risk, ref.risk]), ref.low, sample_weight=kish(ref.freq))
-    res = est.estimate(np.column_stack([1 - new.risk, new.risk]), sample_weight=kish(new.freq))
+        np.column_stack([1 - ref.risk, ref.risk]), ref.low, sample_weight=ref.freq.to_numpy())
+    res = est.estimate(np.column_stack([1 - new.risk, new.risk]),
+                       sample_weight=new.freq.to_numpy())
+    assert out["weights"]["cases"] == new.freq.sum()
     assert out["prevalence"] == pytest.approx(res.prior[1], rel=1e-12)
     assert out["source_prevalence"] == pytest.approx(est.source_prior_[1], rel=1e-12)
     # the weighted source prevalence is the weighted share of positives of the reference file

@@ -59,10 +59,12 @@ from ._prevalence_numbers import (
     held_toward_source,
     interval_reach,
     kish_scaled,
+    library_weights,
     prevalence_from_reference,
     prevalence_from_source,
     reference_estimator,
     source_baseline_standard_error,
+    table_cases,
 )
 from ._progress import Stages
 from ._promise_flags import add_alarm_flags, alarm_settings
@@ -177,10 +179,12 @@ def _classes_by_label(message: str, names: dict[str, Any]) -> str:
 
 def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
               seed: int | None, weights: np.ndarray | None = None,
-              cells: np.ndarray | None = None) -> list[dict[str, Any]]:
+              cells: np.ndarray | None = None, cases: bool = False) -> list[dict[str, Any]]:
     """Each batch's estimate. A warning met in a batch is warned once per kind (messages that
     differ only in their numbers), naming the batch it is shown for and how many more had it:
-    it said "250 effective unlabelled rows" without saying of which batch."""
+    it said "250 effective unlabelled rows" without saying of which batch. ``cases``: a
+    batch whose weights are a count table counts its cases (``effective_rows``), as the
+    estimate read them (:func:`library_weights`)."""
     uniq, first, inverse = np.unique(labels, return_index=True, return_inverse=True)
     rows = []
     kinds: dict[tuple[type, str], list[Any]] = {}
@@ -208,8 +212,10 @@ def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
         rows[-1]["interval_reach"] = interval_reach(res["interval"])
         if "effective_rows" in res:  # with cells: Kish's count over the design effect
             rows[-1]["effective_rows"] = float(res["effective_rows"])
-        elif weights is not None:  # the alarm counts a weighted batch by Kish's size
-            rows[-1]["effective_rows"] = effective_rows(weights[mask], int(mask.sum()))
+        elif weights is not None:  # the alarm counts a weighted batch by Kish's size,
+            # a count table's batch by its cases where the estimate counted them
+            rows[-1]["effective_rows"] = ((cases and table_cases(weights[mask]))
+                                          or effective_rows(weights[mask], int(mask.sum())))
     for (category, _), (message, batch, batches) in kinds.items():
         more = len(batches) - 1
         also = f" (and {more} more batch{'es' if more > 1 else ''} alike)" if more else ""
@@ -415,16 +421,28 @@ def _run(args: argparse.Namespace) -> int:
                                                      if args.reference_score_column
                                                      else "--score-column")
             )
-            ref_settings = {"reference_weight": kish_scaled(ref_weights)}
+            ref_settings = {}
             if args.reference_cell_column is not None:
                 ref_settings["reference_cells"] = _cells(ref, args.reference_cell_column,
                                                          args.reference, "--reference-cell-column")
-        check_row_count("prevalence", proba.shape[0], args.unlabelled, "unlabelled rows",
-                        sample_weight=weights,
+            # a count table as its cases, as the library reads it; other weights by Kish's size
+            ref_settings["reference_weight"] = library_weights(
+                ref_weights, ref_settings.get("reference_cells"))
+        # with --reference, a count table counts its cases (as the library does) unless
+        # cells are given; --source-prevalence reads weights as relative (em_prior, shift_test)
+        cases = (None if args.reference is None or args.cell_column is not None
+                 else table_cases(weights))
+        check_row_count("prevalence", proba.shape[0] if cases is None else int(cases),
+                        args.unlabelled, "unlabelled rows" if cases is None else "unlabelled cases",
+                        sample_weight=weights if cases is None else None,
                         counted="the interval and the test of no shift count")
         if args.reference is not None:
-            check_row_count("prevalence", ref_scores.shape[0], args.reference, "reference rows",
-                            sample_weight=ref_weights,
+            ref_cases = (None if args.reference_cell_column is not None
+                         else table_cases(ref_weights))
+            check_row_count("prevalence", ref_scores.shape[0] if ref_cases is None
+                            else int(ref_cases), args.reference,
+                            "reference rows" if ref_cases is None else "reference cases",
+                            sample_weight=ref_weights if ref_cases is None else None,
                             counted="the interval and the test of no shift count")
             judged = np.ones(ref_y.shape[0], bool) if ref_weights is None else ref_weights > 0
             check_ranking("prevalence", ref_scores[judged], ref_y[judged], labels,
@@ -444,14 +462,15 @@ def _run(args: argparse.Namespace) -> int:
                     out = prevalence_from_reference(
                         proba, ref_scores, ref_y, method=args.method,
                         recalibrate=not args.no_recalibration,
-                        sample_weight=kish_scaled(weights), cells=cells,
+                        sample_weight=library_weights(weights, cells), cells=cells,
                         reference_folds=args.reference_folds, **ref_settings, **settings,
                     )
                     out["labels"] = {"negative": labels[0], "positive": labels[1]}
                 if batch_labels is not None:
                     def one(p: np.ndarray, w: np.ndarray | None, seed: int | None,
                             c: np.ndarray | None) -> dict[str, Any]:
-                        kw = {**settings, "seed": seed, "sample_weight": kish_scaled(w)}
+                        kw = {**settings, "seed": seed, "sample_weight": (
+                            kish_scaled(w) if args.reference is None else library_weights(w, c))}
                         if args.reference is None:
                             return prevalence_from_source(p, args.source_prevalence,
                                                           edge_warning=False, **kw)
@@ -462,14 +481,16 @@ def _run(args: argparse.Namespace) -> int:
 
                     out["batches"] = _by_batch(
                         one, proba, batch_labels, args.seed, weights,
-                        None if args.reference is None else cells)
+                        None if args.reference is None else cells,
+                        cases=args.reference is not None)
                     out["alarm"] = batch_alarm_json(
                         out["batches"], out["source_prevalence"],
                         confidence_level=args.confidence, reference=args.alarm_reference,
                         decision_interval=args.alarm_decision_interval,
                         labelled_rows=(np.inf if args.reference is None else
                                        out.get("reference_effective_rows",
-                                               effective_rows(ref_weights, ref_y.shape[0]))),
+                                               ref_cases or effective_rows(ref_weights,
+                                                                           ref_y.shape[0]))),
                         baseline_standard_error=_baseline_error(
                             args, out, proba, weights, settings,
                             None if args.reference is None else
@@ -484,8 +505,10 @@ def _run(args: argparse.Namespace) -> int:
     report_warnings("prevalence", caught)
     if weights is not None:
         out["weights"] = weight_summary(args.weight_column, weights)
+        out["weights"]["cases"] = cases
     if ref_weights is not None:
         out["reference_weights"] = weight_summary(args.reference_weight_column, ref_weights)
+        out["reference_weights"]["cases"] = ref_cases
     if not all(np.isfinite(v) for v in (out["prevalence"], out["shift_statistic"])):
         raise DataError(
             f"{args.unlabelled}: the prevalence cannot be estimated (the computation did not "
@@ -498,8 +521,11 @@ def _run(args: argparse.Namespace) -> int:
         for key, which in (("weights", "unlabelled"), ("reference_weights", "reference")):
             if key in out:
                 ws = out[key]
+                read = (f"a count table: its {ws['cases']:.0f} cases counted"
+                        if ws.get("cases") is not None else
+                        f"{ws['effective_rows']:.1f} effective rows, Kish")
                 print(f"  {which} weights: column {plain(ws['column'])!r}, sum {ws['sum']:.6g} "
-                      f"({ws['effective_rows']:.1f} effective rows, Kish)")
+                      f"({read})")
     return 0
 
 
@@ -536,7 +562,9 @@ def register(subparsers: Any) -> None:
     parser.add_argument(
         "--weight-column", metavar="W", default=None,
         help="column of row weights of the --unlabelled file (numbers >= 0, not all 0; only "
-        "their ratios matter: counted by Kish's effective size); the reference file's rows "
+        "their ratios matter: counted by Kish's effective size, except that with --reference "
+        "and no --cell-column a count table (whole numbers, some above 1, no common factor "
+        "above 1) counts its cases, as one row per case would); the reference file's rows "
         "take --reference-weight-column",
     )
     add_weight_dots_flag(parser)
@@ -556,7 +584,8 @@ def register(subparsers: Any) -> None:
     parser.add_argument(
         "--reference-weight-column", metavar="W", default=None,
         help="with --reference: column of row weights of the reference file (numbers >= 0, "
-        "not all 0); --weight-column weights only the unlabelled file",
+        "not all 0; read as --weight-column is: a count table counts its cases unless "
+        "--reference-cell-column is given); --weight-column weights only the unlabelled file",
     )
     parser.add_argument(
         "--reference-folds", type=whole_number(1), metavar="K", default=None,

@@ -18,7 +18,8 @@ from ._progress import progress
 __all__ = ["prevalence_from_source", "prevalence_from_reference", "batch_alarm_json",
            "held_toward_source", "interval_reach",
            "two_columns", "result_dict", "effective_rows",
-           "kish_scaled", "reference_estimator", "source_baseline_standard_error"]
+           "kish_scaled", "library_weights", "reference_estimator", "table_cases",
+           "source_baseline_standard_error"]
 
 
 def two_columns(p: np.ndarray) -> np.ndarray:
@@ -333,7 +334,8 @@ def reference_estimator(
     reference_cells: np.ndarray | None = None,
 ) -> Any:
     """The :class:`probwrap.shift.PriorEstimator` of ``prevalence --reference``, fitted on the
-    reference rows (``reference_weight``: their weights, read by Kish's effective size)."""
+    reference rows (``reference_weight``: their weights as :func:`library_weights` passes them:
+    a count table's cases, other weights by Kish's effective size)."""
     from probwrap.shift import PriorEstimator
 
     return PriorEstimator(
@@ -343,7 +345,7 @@ def reference_estimator(
         confidence_level=confidence_level,
         random_state=seed,
     ).fit(two_columns(ref_proba), ref_y, sample_weight=reference_weight, cells=reference_cells,
-          _weight_owner=None)  # (rescaled to Kish's size on purpose: nothing to warn about)
+          _weight_owner=None)  # (a count table's cases, or Kish's size: nothing to warn about)
 
 
 def source_baseline_standard_error(
@@ -480,6 +482,33 @@ def kish_scaled(w: np.ndarray | None) -> np.ndarray | None:
         return None
     u = w / w.max()
     return u * (u.sum() / (u @ u))
+
+
+def library_weights(w: np.ndarray | None, cells: np.ndarray | None = None) -> np.ndarray | None:
+    """The weights ``prevalence --reference`` passes to :class:`probwrap.shift.PriorEstimator`:
+    a count table (:func:`probwrap._validation.whole_counts`: whole numbers, some above 1, no
+    common factor above 1, at most 1e6 cases) unchanged, so that the estimator counts its cases
+    as it does for the same weights given in Python (since session 27), and the same cases one
+    row each give the same estimate, interval and p-value; other weights, and any weights with
+    ``cells`` (the cells' clustering counts the units), :func:`kish_scaled`. Before, a count
+    table was rescaled to Kish's size: vcd CoalMiners, 1,000 unlabelled miners on 16 cells,
+    counted as about 13 rows (interval about [0, 0.7] against the library's [0.13, 0.31])."""
+    if w is None:
+        return None
+    if cells is None and table_cases(w) is not None:
+        return w
+    return kish_scaled(w)
+
+
+def table_cases(w: np.ndarray | None) -> float | None:
+    """The number of cases of a count table read as its cases (:func:`library_weights`), or
+    None for other weights (read as relative, by Kish's size)."""
+    from probwrap._validation import whole_counts
+
+    if w is None:
+        return None
+    counts = whole_counts(np.asarray(w, dtype=float))
+    return None if counts is None else float(counts.sum())
 
 
 def result_dict(prev, converged, method, n, source, test) -> dict[str, Any]:
