@@ -135,3 +135,34 @@ def test_text_output_says_the_cases_are_counted(files, capsys):
     out, err = capsys.readouterr()
     assert code == 0, err
     assert "a count table: its 1000 cases counted" in out
+
+
+@pytest.mark.filterwarnings("ignore::UserWarning")
+def test_batches_of_a_count_table_count_their_cases(files, capsys, tmp_path):
+    """Each batch of a count table is estimated as the library estimates it and counts its
+    cases in the alarm (``effective_rows``; before: Kish's size of the batch's cells). (Every
+    other cell per batch: the batches' scores fit no mixture of the classes', which the
+    library's check warns of; the command line says it too.)"""
+    from probwrap.shift import PriorEstimator
+
+    root, ref, new = files
+    two = new.assign(batch=np.where(np.arange(len(new)) % 2 == 0, "a", "b"))
+    two.to_csv(tmp_path / "batches.csv", index=False)
+    code = main(["prevalence", "--unlabelled", str(tmp_path / "batches.csv"),
+                 "--score-column", "score", "--reference", str(root / "ref.csv"),
+                 "--label-column", "breathless", "--resamples", "50", "--format", "json",
+                 "--weight-column", "miners", "--reference-weight-column", "miners",
+                 "--batch-column", "batch"])
+    out, err = capsys.readouterr()
+    assert code == 0, err
+    out = json.loads(out)
+    for i, b in enumerate(out["batches"]):
+        part = two[two.batch == b["batch"]]
+        w = part.miners.to_numpy(float)
+        assert b["effective_rows"] == w.sum() > 3 * w.sum() ** 2 / (w @ w)
+        est = PriorEstimator("em", calibration="bcts", n_resamples=50, random_state=1 + i).fit(
+            np.column_stack([1 - ref.score, ref.score]), ref.breathless,
+            sample_weight=ref.miners.to_numpy(float))
+        res = est.estimate(np.column_stack([1 - part.score, part.score]), sample_weight=w)
+        assert b["prevalence"] == pytest.approx(res.prior[1], rel=1e-12)
+        assert b["interval"] == pytest.approx(list(res.interval[1]), rel=1e-9)
