@@ -166,3 +166,14 @@ def test_batches_of_a_count_table_count_their_cases(files, capsys, tmp_path):
         res = est.estimate(np.column_stack([1 - part.score, part.score]), sample_weight=w)
         assert b["prevalence"] == pytest.approx(res.prior[1], rel=1e-12)
         assert b["interval"] == pytest.approx(list(res.interval[1]), rel=1e-9)
+
+
+def test_few_rows_warning_names_the_common_factor(files, capsys):
+    """Counts x 2 on 18 rows: the few-rows warning says to divide by the factor 2, after which
+    the table's cases count (with --reference); the count table itself draws no such warning."""
+    root, _, _ = files
+    _, err = _both(capsys, root, "_x2")
+    assert "only 18 unlabelled rows" in err
+    assert "divide the weights by their common factor 2" in err
+    _, err = _both(capsys, root)
+    assert "only 18 unlabelled rows" not in err and "common factor" not in err

@@ -284,8 +284,11 @@ def check_ranking(
 
 def check_row_count(verb: str, n_rows: int, path: str | Path, what: str = "rows",
                     sample_weight: np.ndarray | None = None,
-                    counted: str = "the intervals count") -> None:
+                    counted: str = "the intervals count", hint: str = "") -> None:
     """Warn when a file has fewer than :data:`FEW_ROWS` rows (intervals and tests unreliable).
+
+    ``hint``: added to the advice for whole-number weights (``prevalence --reference``:
+    counts without their common factor are counted as cases).
 
     With whole-number weights summing to :data:`FEW_ROWS` or more (a table of counts), the
     warning says what to do: the parts named by ``counted`` (the verb's intervals, its choice
@@ -303,7 +306,7 @@ def check_row_count(verb: str, n_rows: int, path: str | Path, what: str = "rows"
                     f". The weights sum to {total:.0f}, but {counted} the file's {n_rows} "
                     f"{what} (Kish's effective number when the weights vary), not the weights; "
                     "if each weight counts identical rows, repeat each row that many times to "
-                    "have them counted"
+                    "have them counted" + hint
                 )
         warn_line(verb, message)
 

@@ -177,6 +177,18 @@ def _classes_by_label(message: str, names: dict[str, Any]) -> str:
     return message.replace("class index 0", neg).replace("class index 1", pos)
 
 
+def _factor_hint(w: np.ndarray | None, counted: bool) -> str:
+    """The end of the few-rows warning for whole-number weights sharing a factor above 1
+    (``counted``: with --reference and no cells, where a count table counts its cases)."""
+    from .._validation import shared_factor
+
+    factor = None if w is None or not counted else shared_factor(w)
+    if factor is None or factor < 2 or float(w.sum()) / factor > 1e6:
+        return ""
+    return (f"; or, if they are counts, divide the weights by their common factor {factor}: "
+            "a table of counts without one (at most 1e6 cases) counts its cases here")
+
+
 def _by_batch(estimate: Any, proba: np.ndarray, labels: np.ndarray,
               seed: int | None, weights: np.ndarray | None = None,
               cells: np.ndarray | None = None, cases: bool = False) -> list[dict[str, Any]]:
@@ -435,7 +447,9 @@ def _run(args: argparse.Namespace) -> int:
         check_row_count("prevalence", proba.shape[0] if cases is None else int(cases),
                         args.unlabelled, "unlabelled rows" if cases is None else "unlabelled cases",
                         sample_weight=weights if cases is None else None,
-                        counted="the interval and the test of no shift count")
+                        counted="the interval and the test of no shift count",
+                        hint=_factor_hint(weights, args.reference is not None
+                                          and args.cell_column is None))
         if args.reference is not None:
             ref_cases = (None if args.reference_cell_column is not None
                          else table_cases(ref_weights))
@@ -443,7 +457,8 @@ def _run(args: argparse.Namespace) -> int:
                             else int(ref_cases), args.reference,
                             "reference rows" if ref_cases is None else "reference cases",
                             sample_weight=ref_weights if ref_cases is None else None,
-                            counted="the interval and the test of no shift count")
+                            counted="the interval and the test of no shift count",
+                            hint=_factor_hint(ref_weights, args.reference_cell_column is None))
             judged = np.ones(ref_y.shape[0], bool) if ref_weights is None else ref_weights > 0
             check_ranking("prevalence", ref_scores[judged], ref_y[judged], labels,
                           args.reference,
