@@ -296,26 +296,32 @@ def test_multiclass_by_group_resamples_cells_as_statsmodels_cluster_errors():
 
 
 def test_overdispersion_note_says_how_the_prevalence_part_counts_the_labelled_rows(star98):
-    # The shift test and the prevalence interval read weights as relative (docs/weights.md)
-    # and count the labelled rows by Kish's size: on star98 neither the 303 districts nor the
-    # 267,611 pupils. Against statsmodels' cluster-robust errors (districts) that is too wide
-    # for the labelled prevalence and too narrow for the labelled mean score; the note says
-    # so rather than claiming one direction.
+    # star98's expanded rows carry whole-number counts of pupils: a count table, which the
+    # shift test and the prevalence interval read as its cases since session 27
+    # (docs/weights.md), so they count the 267,611 pupils as independent, not the 303
+    # districts. Against statsmodels' cluster-robust errors (districts) that is far too narrow
+    # for both the labelled prevalence and the labelled mean score; the note says so and names
+    # the remedy. Scaled weights keep Kish's reading, and the note then says that instead.
     from probwrap.shift import PriorEstimator
 
     s = star98
     c = s["content"]
     w = s["w"]
-    kish = w.sum() ** 2 / np.dot(w, w)
+    trials = w.sum()
     note = next(n for n in c.notes if n.key == "cells")
-    assert f"Kish's effective size of the weights ({kish:.4g} rows here, for 303 cells of " \
-           "267611 trials)" in note.message
+    assert "count the labelled rows as 267611 independent cases (a count table's whole-number " \
+           "weights, for 303 cells)" in note.message
+    assert "pass the cells as `cells`" in note.message
     y, p = c.y_true, c.y_prob
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         est = PriorEstimator(n_resamples=2, random_state=0).fit(
             np.column_stack([1 - p, p]), y.astype(int), w)
-    assert est.n_source_effective_ == pytest.approx(kish, rel=1e-12)  # measured 59.6
+        scaled = PriorEstimator(n_resamples=2, random_state=0).fit(
+            np.column_stack([1 - p, p]), y.astype(int), w / trials)
+    assert est.n_source_effective_ == pytest.approx(trials, rel=1e-12)  # 267,611 pupils
+    kish = trials ** 2 / np.dot(w, w)
+    assert scaled.n_source_effective_ == pytest.approx(kish, rel=1e-9)  # measured 59.6
     district = np.repeat(np.arange(s["k"].shape[0]), 2)[
         np.column_stack([s["k"], s["n"] - s["k"]]).ravel() > 0]
 
@@ -324,6 +330,6 @@ def test_overdispersion_note_says_how_the_prevalence_part_counts_the_labelled_ro
             cov_type="cluster", cov_kwds={"groups": district, "use_correction": False}).bse[0]
 
     f = np.average(y, weights=w)
-    # labels: Kish 0.064 vs cluster 0.027 (2.4x); mean score: 0.021 vs 0.031 (0.68x)
-    assert np.sqrt(f * (1 - f) / kish) > 2 * cluster_se(y)
-    assert np.sqrt(np.cov(p, aweights=w) / kish) < 0.8 * cluster_se(p)
+    # read as cases, both labelled parts are several times too narrow against the districts
+    assert np.sqrt(f * (1 - f) / trials) < 0.2 * cluster_se(y)
+    assert np.sqrt(np.cov(p, aweights=w) / trials) < 0.2 * cluster_se(p)

@@ -46,7 +46,7 @@ import numpy as np
 from scipy.stats import chi2
 
 from .._heldout import feature_cells
-from .._validation import plain
+from .._validation import plain, whole_counts
 
 __all__ = ["ResamplingUnit", "resampling_unit", "unit_words", "DISPERSION_NOTE_RATIO",
            "DISPERSION_NOTE_PVALUE", "bin_dispersion", "bin_intervals", "frequency_table_levels",
@@ -318,16 +318,23 @@ def resampling_unit(cells: Any, *, n: int, y_index: np.ndarray, w: np.ndarray | 
             and pvalue < DISPERSION_NOTE_PVALUE):
         ww = np.asarray(w, dtype=float)
         trials = float(ww.sum())
-        kish = trials ** 2 / float(np.dot(ww, ww))
+        if whole_counts(ww) is not None:
+            # a count table: the prior-shift estimate reads its cases (docs/weights.md)
+            counted = (f"as {trials:.6g} independent cases (a count table's whole-number "
+                       f"weights, for {n_cells} cells), not by cells, so their labelled part is "
+                       "too narrow where the cells' cases share causes; pass the cells as "
+                       "`cells` to the prior-shift wrapper")
+        else:
+            kish = trials ** 2 / float(np.dot(ww, ww))
+            counted = (f"by Kish's effective size of the weights ({kish:.4g} rows here, for "
+                       f"{n_cells} cells of {trials:.6g} trials), not by cells, so their "
+                       "labelled part may be too narrow or too wide")
         message = (
             f"the {n_cells} cells vary {ratio:.3g} times as much as binomial counts would "
             f"(Pearson dispersion; chi-square p = {pvalue:.2g}): the intervals here resample "
             "whole cells and carry that, and the reliability diagram's Wilson intervals are "
             "widened by its square root (quasi-binomial); the shift test and the prevalence "
-            "interval count the labelled rows by Kish's effective size of the weights "
-            f"({kish:.4g} rows here, for {n_cells} cells of {trials:.6g} trials), not by "
-            "cells, so their labelled part may be too narrow or too wide; compare models on "
-            "held-out cells"
+            f"interval count the labelled rows {counted}; compare models on held-out cells"
         )
         notes.add("cells", "overdispersion", "UserWarning", message)
         warnings.warn(f"report, overdispersion: {message}", UserWarning, stacklevel=4)
