@@ -196,7 +196,9 @@ def test_tail_choice_folds_cases_not_cells(miners):
     assert table == rows and rows[2] > 0  # the cases keep the order of the tail
     psw_t = PriorShiftWrapper(FrozenEstimator(nb)).fit(Xl, yl, sample_weight=L)
     psw_r = PriorShiftWrapper(FrozenEstimator(nb)).fit(np.repeat(Xl, L, axis=0), np.repeat(yl, L))
-    np.testing.assert_allclose(psw_t.calibrator_.scale_, psw_r.calibrator_.scale_, rtol=1e-9)
+    # (equal to the optimiser's tolerance: 1.8e-8 apart under scikit-learn 1.6.1; the old
+    # reading of the table gave 1.00 against 1.36)
+    np.testing.assert_allclose(psw_t.calibrator_.scale_, psw_r.calibrator_.scale_, rtol=1e-6)
 
 
 def test_dask_tally_reads_a_count_table_as_in_memory(tally_path):
