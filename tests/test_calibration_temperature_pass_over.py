@@ -9,7 +9,7 @@ off by more than ``_BASE_RATE_SE`` standard errors (the mean-calibration test,
 calibration-in-the-large: Cox 1958) and another map scored lower on the folds, it is no simpler
 account of the rows than that map, so the rule goes on to the next map in its order; before,
 it did so only for Platt scaling scoring lower and within a standard error of the best map
-(docs/small_data.md, session 24, "auto cells above 1.10x").
+(docs/evidence/small_data_log.md, session 24, "auto cells above 1.10x").
 """
 
 from __future__ import annotations

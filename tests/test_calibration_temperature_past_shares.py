@@ -5,7 +5,7 @@ Temperature scaling is the first map of the one-standard-error rule, but softene
 it tends to probability 1/2 for every row, not to the class share. Where its cross-validated
 log loss is above the class shares' and, fitted on all held-out rows, it fits them worse than
 the class shares do (both maps have one parameter), it is not kept for being simple: the next
-map in the order is tried (docs/small_data.md, twenty-second session).
+map in the order is tried (docs/evidence/small_data_log.md, twenty-second session).
 """
 
 from __future__ import annotations

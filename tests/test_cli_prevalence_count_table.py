@@ -1,5 +1,5 @@
 """``probwrap prevalence --reference`` reads a count-table weight column as its cases, as the
-library does since session 27 (docs/prior_shift.md "Count tables in adapt").
+library does since session 27 (docs/evidence/prior_shift_log.md "Count tables in adapt").
 
 A count table's weights are whole numbers, some above 1, with no common factor above 1
 (docs/weights.md). The library's :class:`probwrap.shift.PriorEstimator` (and

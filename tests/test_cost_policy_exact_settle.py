@@ -1,6 +1,6 @@
 """The tuned cutoff's settling test is exact: a few negative rows cannot overturn the plug-in cutoff.
 
-Found on the newer sets of the twenty-first session (docs/small_data.md, "cost rules on the
+Found on the newer sets of the twenty-first session (docs/evidence/small_data_log.md, "cost rules on the
 newer sets"): with 40 held-out rows and a miss costing 10 false alarms, the normal approximation
 to the paired cost difference rejected the plug-in cutoff as soon as three or four negative rows
 and no positive lay between it and the least-cost cutoff, although a positive share of up to

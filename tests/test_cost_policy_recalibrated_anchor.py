@@ -200,7 +200,7 @@ def test_a_map_that_lifts_zero_above_the_plugin_value_flags_exact_zeros():
 def test_cross_fitted_naive_bayes_on_digits_flags_the_rows_its_map_lifts():
     # scikit-learn's digits, "8" against the rest, naive Bayes cross-fitted on 100 rows, a miss
     # costing 30 (found by running the cells of benchmarks/crossfit_sweep.py --only cost on
-    # digits' one-against-rest tasks with that cost; docs/small_data.md, fourteenth session): the
+    # digits' one-against-rest tasks with that cost; docs/evidence/small_data_log.md, fourteenth session): the
     # out-of-fold probabilities pile at exactly 0 and 1, the map chosen on them lifts 0 above
     # the plug-in value, and the tuned rule now flags every row as scikit-learn's
     # TunedThresholdClassifierCV and the plug-in rule on CalibrationWrapper(model) would say;

@@ -2,7 +2,7 @@
 
 ``adapt`` warns when it moved the predictions on evidence a no-shift draw gives often (shift
 test p >= 0.10) and the move, had the rows' shares not changed, would raise their log loss by
-more than 2 % (docs/prior_shift.md, "One draw's harm when nothing moved"). That prediction reads
+more than 2 % (docs/evidence/prior_shift_log.md, "One draw's harm when nothing moved"). That prediction reads
 ``null_move_ratio`` (the largest eigenvalue of J Sigma over that of K Sigma); the multiclass
 Dask/Spark path beyond 20,000 rows (sums on the workers) did not compute it before 4 December
 2026 and never warned. It now reads the same sums as its harm scale (the mean posterior and

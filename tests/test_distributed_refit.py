@@ -170,7 +170,7 @@ def test_multiclass_adapt_on_dask_is_the_in_memory_adapt(digits, request, path, 
                                    mem.prior_estimate_.ml_interval, atol=1e-9)
     else:
         # the reductions read every row once per fold model, weighted by the fold's share, as
-        # the in-memory estimate does since 4 December 2026 (docs/prior_shift.md, "The point
+        # the in-memory estimate does since 4 December 2026 (docs/evidence/prior_shift_log.md, "The point
         # estimate after a refit"); before, they read the refit model's posteriors
         # (tests/test_distributed_refit_large.py)
         np.testing.assert_allclose(dist.prior_estimate_.ml_prior, mem.prior_estimate_.ml_prior,

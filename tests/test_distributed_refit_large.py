@@ -15,7 +15,7 @@ tests/test_prior_shift_refit_interval.py); the fold posteriors are also rebuilt 
 scikit-learn's ``StratifiedKFold`` and ``clone``. Data: scikit-learn's bundled breast cancer.
 
 The point estimate: in memory it reads every unlabelled row once per fold model, weighted by the
-fold's share (docs/prior_shift.md, "The point estimate after a refit"). The pass that sums the
+fold's share (docs/evidence/prior_shift_log.md, "The point estimate after a refit"). The pass that sums the
 grid also tallies those rows (each row's log-odds once per fold model), and the estimate reads
 the bins; with more than two classes (digits) the stacked fold posteriors stay on the workers
 for EM's passes. Before, both read the refit model (0.003-0.004 off in memory's estimate here,

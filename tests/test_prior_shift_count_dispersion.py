@@ -4,7 +4,7 @@ once (session 27).
 Since session 27 ``fit`` and ``adapt`` read a count table's whole-number weights as its cases,
 so statsmodels' star98 (school districts, pupils above the median of those tested) without
 ``cells=`` counts independent pupils, and adapt's interval is about 0.075 times the districts'
-clustered width (docs/prior_shift.md, "Count tables in adapt (session 27)"). The check is the
+clustered width (docs/evidence/prior_shift_log.md, "Count tables in adapt (session 27)"). The check is the
 one CalibrationWrapper(method="auto") and the tuned cutoff run (``table_dispersion``: Pearson's
 chi-square over its residual degrees of freedom around a binomial GLM of the groups on the
 held-out log-odds, McCullagh & Nelder 1989, sec. 4.5; checked against statsmodels'

@@ -1,6 +1,6 @@
 """Estimates far from the truth say so: ``adapt`` raises ImprecisePriorWarning when a class
 share's interval reaches more than 0.25 from ``target_prior_`` (issue 10; measured in
-benchmarks/prior_far_off.py, docs/prior_shift.md 'Estimates far from the truth').
+benchmarks/prior_far_off.py, docs/evidence/prior_shift_log.md 'Estimates far from the truth').
 
 The draws are those of benchmarks/prior_far_off.py: a base model fitted on a quarter of the rows
 (at most 600) and frozen, labelled rows drawn at random from the rest, 300 unlabelled rows

@@ -67,7 +67,7 @@ def test_off_by_default_nothing_kept_nothing_checked():
 
 
 def test_adapt_warns_on_a_texture_subgroup_and_names_the_column():
-    # the score checks let these batches through (docs/prior_shift.md); the feature check
+    # the score checks let these batches through (docs/evidence/prior_shift_log.md); the feature check
     # from adapt flags them and names mean texture first. Measured 10 of 10 flagged.
     flagged = 0
     for seed in range(10):

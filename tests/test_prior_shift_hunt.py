@@ -1,4 +1,4 @@
-"""Findings of the eighteenth session's prior-shift hunt (docs/small_data.md): no unlabelled rows,
+"""Findings of the eighteenth session's prior-shift hunt (docs/evidence/small_data_log.md): no unlabelled rows,
 and labelled rows passed more than once.
 
 Data: scikit-learn's bundled breast cancer set and statsmodels' bundled fair set; the

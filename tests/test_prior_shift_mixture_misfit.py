@@ -1,5 +1,5 @@
 """The check that a two-class batch's scores fit some mixture of the labelled classes
-(``class_mixture_misfit``, ``ClassMixtureMisfitWarning``; docs/prior_shift.md, "A level-holding
+(``class_mixture_misfit``, ``ClassMixtureMisfitWarning``; docs/evidence/prior_shift_log.md, "A level-holding
 check of the batch's shape")."""
 
 from __future__ import annotations

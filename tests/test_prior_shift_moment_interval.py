@@ -29,7 +29,7 @@ def wine_pool():
     # intensity) fitted on a third of the rows; its probabilities on the other rows are the
     # pool that labelled and unlabelled rows are resampled from by class, so the class shares
     # are known exactly and the shift is a pure prior shift. The bias-corrected temperature
-    # map cannot fit this pool's class probabilities (docs/prior_shift.md, "(b) Wine").
+    # map cannot fit this pool's class probabilities (docs/evidence/prior_shift_log.md, "(b) Wine").
     X, y = load_wine(return_X_y=True)
     X = X[:, [0, 9]]
     order = np.random.default_rng(0).permutation(y.shape[0])

@@ -9,7 +9,7 @@ estimate of 0.19, and the log loss of the unlabelled rows rose 3.9 % (issue 10 a
 draws: 0.5 % on average, yet 8 % of the draws above 2 %), not per draw. Session 22 added the
 warning (NoShiftHarmWarning); session 23 also holds such a move (p >= 0.10) to what would cost
 a no-shift draw 2 % (``draw_capped_weight``): on this cell 1.039 -> 1.010
-(docs/prior_shift.md, "Milder per-draw caps (twenty-third session)").
+(docs/evidence/prior_shift_log.md, "Milder per-draw caps (twenty-third session)").
 """
 
 from __future__ import annotations
@@ -125,7 +125,7 @@ def test_weak_evidence_below_the_cap_warns_without_holding_the_move():
     shifted cells of benchmarks/shift.py --quick 0.5-1.6 points of the gap share) but a move that
     would cost a no-shift draw more than 2 % now warns. This no-shift draw of ad_data (seed 50)
     moved 66 % of the way at p = 0.053 and lost 7.7 % of its log loss (scikit-learn's
-    ``log_loss``) with no warning at all before (docs/prior_shift.md, "Weak-evidence draws
+    ``log_loss``) with no warning at all before (docs/evidence/prior_shift_log.md, "Weak-evidence draws
     between p = 0.05 and 0.10 (session 26)")."""
     psw, X, y = cell(50)
     ratio, caught = adapted(psw, X, y)

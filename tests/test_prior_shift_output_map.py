@@ -1,6 +1,6 @@
 """PriorShiftWrapper before adapt on small labelled sets whose labels contradict the model's
 confidence: the output comes from CalibrationWrapper(method="auto")'s choice on the same held-out
-probabilities (docs/prior_shift.md, "Before adapt on small labelled sets")."""
+probabilities (docs/evidence/prior_shift_log.md, "Before adapt on small labelled sets")."""
 
 from __future__ import annotations
 

@@ -2,10 +2,10 @@
 
 The twenty-sixth session's cases: a saturated naive Bayes (most held-out probabilities exactly 0
 or 1), a frozen forest whose own probabilities the likelihood-ratio test keeps, and more than two
-classes (docs/prior_shift.md, "Before adapt: the session-26 changes"). The twenty-seventh
+classes (docs/evidence/prior_shift_log.md, "Before adapt: the session-26 changes"). The twenty-seventh
 session's: the model's own probabilities kept by the likelihood-ratio test give way to the map
 where the map softens them and the labelled rows carry at least two rows' worth of information
-on its intercept (docs/prior_shift.md, "Before adapt: the session-27 changes")."""
+on its intercept (docs/evidence/prior_shift_log.md, "Before adapt: the session-27 changes")."""
 
 from __future__ import annotations
 

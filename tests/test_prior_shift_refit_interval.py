@@ -482,7 +482,7 @@ def test_many_labelled_rows_keep_no_fold_models_unless_asked(cancer_split, monke
     # More than SMALL_HELDOUT_ROWS labelled rows (lowered here to 100 of the 250) without
     # keep_heldout: the held-out scores become a tally that mixes the folds and no fold models
     # are kept, so the interval is the one with the fold models hidden (up to the tally's
-    # binning), without a warning (measured negligible at 25,000 rows: docs/prior_shift.md);
+    # binning), without a warning (measured negligible at 25,000 rows: docs/evidence/prior_shift_log.md);
     # keep_heldout=True keeps the rows and the fold models and carries the refit.
     import probwrap._prior_shift as module
 
@@ -522,7 +522,7 @@ def test_point_estimate_is_the_fold_averaged_root(cancer_split, predict_with):
     # found by SciPy's brentq. Before, the root read the refit model's posteriors through the
     # calibration fitted on the fold models' held-out ones (about 0.001 away here, 1,000 times
     # the tolerance below; on diamonds at 2,000 labelled rows a bias of -0.02,
-    # docs/prior_shift.md).
+    # docs/evidence/prior_shift_log.md).
     from scipy.optimize import brentq
 
     X, y, X_new = cancer_split

@@ -1,6 +1,6 @@
 """Unlabelled rows that repeat one another beyond chance are counted as cells and warned about.
 
-Found by benchmarks/hunt22_sweep.py (docs/small_data.md, twenty-second session): R's AER
+Found by benchmarks/hunt22_sweep.py (docs/evidence/small_data_log.md, twenty-second session): R's AER
 PhDPublications ("any article", a logistic regression, half 2) at 0.5 times the prevalence gave
 an estimate of 0.752 with interval [0.554, 1] for a true 0.398, and survival nwtco (relapse,
 half 2) at 1 times 0.050 [0, 0.094] for 0.122 with the log loss 5 % worse than no adjustment,
@@ -9,7 +9,7 @@ both without a warning. The sweep's batch is 400 rows drawn *with replacement* f
 as well as its own, and the interval counted the 400 rows as independent draws. Over 100 halves
 such batches held the truth in 90-93 % (PhDPublications) and 84-94 % (nwtco) at 95 %; batches
 drawn without replacement, 95-100 %; with the repeats clustered, 93-97 % and 95-97 %
-(docs/prior_shift.md, "Confident misses on real sets").
+(docs/evidence/prior_shift_log.md, "Confident misses on real sets").
 """
 
 from __future__ import annotations

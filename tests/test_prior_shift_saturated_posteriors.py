@@ -1,6 +1,6 @@
 """Distinct rows whose posteriors saturate at exactly 0 or 1 are not reported as repeated rows.
 
-Found by benchmarks/shift_real_hunt24.py (docs/prior_shift.md, "The session-24 hunt"): on R's
+Found by benchmarks/shift_real_hunt24.py (docs/evidence/prior_shift_log.md, "The session-24 hunt"): on R's
 Ecdat Housing (preferred area), Gaussian naive Bayes gives some rows a posterior of exactly 0.
 ``adapt`` judged repeats by identical posteriors alone, so a batch of 179 distinct rows drawn
 without replacement, 12 of them at exactly 0 against 4 of 182 labelled rows, drew

@@ -43,7 +43,7 @@ def test_naive_bayes_20_rows_keeps_the_row_bound_against_the_threshold_blow_up(c
     # held-out row of class 0 at log-odds +26 among class-1 rows at +21..+45. With the floor at
     # half the smallest probability (1e-12, log-odds +-27.6) the map moves its threshold to
     # log-odds +22 (scale 0.64, bias -14.4) and every test row between 0 and +22 is called
-    # class 0. Lower floors tried on 17 tasks x 3 models x 20-100 rows (docs/prior_shift.md,
+    # class 0. Lower floors tried on 17 tasks x 3 models x 20-100 rows (docs/evidence/prior_shift_log.md,
     # "The calibration itself with 20-100 labelled rows": no row bound, the squared row bound,
     # the row bound lowered to the smallest own-class probability) all bring this draw back
     # (0.73-2.09x against 0.48x) or make a naive Bayes cell worse, so the bound stays.

@@ -73,7 +73,7 @@ def test_naive_bayes_100_rows_keeps_the_order_and_gains(cancer_nb):
     # Ten 100-row draws of breast cancer with naive Bayes (scores to 1e-200): the cross-validated
     # choice keeps the order beyond the row bound in 9 of them, and there the wrapper's test log
     # loss is below the flat floor's (measured 0.75-0.87x; geometric mean 0.82x;
-    # over 17 bundled tasks, docs/prior_shift.md, the naive Bayes gap to CalibrationWrapper's
+    # over 17 bundled tasks, docs/evidence/prior_shift_log.md, the naive Bayes gap to CalibrationWrapper's
     # "auto" at 100 rows 1.053 -> 1.041).
     X, y, model, test, pool = cancer_nb
     pt = model.predict_proba(X[test])

@@ -170,7 +170,7 @@ def test_unweighted_unaggregated_data_give_the_same_numbers():
     np.testing.assert_array_equal(_numbers(auto), _numbers(rows))
     # ... except the prevalence's interval and shift statistic: since the report passes its
     # cells to the PriorEstimator, singleton cells give the estimator's two-sample test with
-    # separate variances (docs/prior_shift.md, "Counts (k of n)") instead of the pooled one
+    # separate variances (docs/evidence/prior_shift_log.md, "Counts (k of n)") instead of the pooled one
     prevalence = slice(-len(auto.rules) - 4, -len(auto.rules))  # estimate, interval, statistic
     keep = np.ones(_numbers(auto).shape[0], bool)
     keep[prevalence.start + 1:prevalence.stop] = False

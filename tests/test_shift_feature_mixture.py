@@ -2,7 +2,7 @@
 
 Level on batches drawn by class (prior shift holds by construction), power on a subgroup batch
 (breast cancer rows of high texture, which slide both classes' scores alike and pass the score
-checks: docs/prior_shift.md, "A level-holding check of the batch's shape"), the rank statistic
+checks: docs/evidence/prior_shift_log.md, "A level-holding check of the batch's shape"), the rank statistic
 against SciPy's Mann-Whitney test, weights and scale, bad input.
 """
 

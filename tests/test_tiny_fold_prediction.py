@@ -2,7 +2,7 @@
 their scales vary from fold to fold, as CalibrationWrapper's do, and ``adapt`` re-weights
 those same averaged posteriors (estimating from the fold models' own posteriors);
 CalibrationWrapper keeps a refit that spreads wider than every fold model
-(docs/calibration.md, "Which model predicts"; docs/prior_shift.md, "Which model predicts
+(docs/calibration.md, "Which model predicts"; docs/evidence/prior_shift_log.md, "Which model predicts
 after cross-fitting")."""
 
 from __future__ import annotations
@@ -256,7 +256,7 @@ def test_danish_forest_27_rows_fold_models():
     (``train_test_split(test_size=0.5, random_state=0)``): the fold forests' spreads vary
     (0.134), ``auto`` averages them; test log loss before ``adapt`` 1.298 with the refit, now
     1.176 (scikit-learn's sigmoid 0.856: the rest of the gap is the map's scale prior,
-    docs/prior_shift.md)."""
+    docs/evidence/prior_shift_log.md)."""
     import statsmodels.api as sm
     from sklearn.ensemble import RandomForestClassifier
     from sklearn.model_selection import train_test_split
