@@ -10,7 +10,7 @@ replay is exact; the script checks that the replay with the rule as fitted repro
 and each choice costs the test log loss of that map fitted on the same held-out rows. Printed:
 test log loss over scikit-learn's ``CalibratedClassifierCV(method="sigmoid")`` (mean, geometric
 mean, worst, draws above 1.10x) per cell, with the temperature, Platt and beta maps by name, and
-every changed choice. docs/small_data.md, "auto on 40 cross-fitted rows (session 25)".
+every changed choice. docs/evidence/small_data_log.md, "auto on 40 cross-fitted rows (session 25)".
 
 Run: ``nice python benchmarks/auto_after_platt_cells.py --seeds 24`` (the seven named cells; about
 20 minutes on the shared machine), ``--all-binary --sizes 40,100 --seeds 1`` (every binary task

@@ -14,7 +14,7 @@ scikit-learn's ``CalibratedClassifierCV(method="sigmoid")`` with the plug-in cut
 added to both), the worst cell, the cells above 1.10x, before and after, and every changed cell.
 
 Run: ``nice python benchmarks/constant_anchor_cells.py h24|h23|h22 [SEEDS]`` (default 1 seed).
-docs/small_data.md, "The session-24 hunt".
+docs/evidence/small_data_log.md, "The session-24 hunt".
 """
 
 from __future__ import annotations

@@ -28,7 +28,7 @@ beside (``sk_tuned``); lifelines, pingouin and scikit-survival are needed there.
 Run: ``nice python benchmarks/frozen_forest_cost.py h23|h22|anchor|newer|old SEEDS CSV
 [--sets a,b] [--models rf] [--modes frozen] [--sizes 150] [--first K]``; ``... summary CSV``
 prints the summary of a saved run; ``... rules40 CSV [CSV ...]`` scores the 40-row rules of
-``rules40`` on saved runs. docs/small_data.md, "Tuned cost for frozen
+``rules40`` on saved runs. docs/evidence/small_data_log.md, "Tuned cost for frozen
 forests (session 24)".
 """
 
@@ -322,7 +322,7 @@ def rules40(paths: list[str]) -> None:
     there and where that sigmoid flags every held-out row (anchor below 0, ``E``). Prints, per
     run, the geometric mean of cost over the sigmoid at the plug-in cutoff | the worst cell
     (draws; for newer/old runs cells of mean cost), with the number of draws changed.
-    docs/small_data.md, "40-row frozen forests (session 24, third wave)"."""
+    docs/evidence/small_data_log.md, "40-row frozen forests (session 24, third wave)"."""
     for path in paths:
         d = pd.read_csv(path)
         small = d.coarse.astype(bool) & (d.n <= 40)

@@ -46,7 +46,7 @@ a probwrap warning, the weight-scale check, the tuned cost over the sigmoid's pl
 
 Run: ``nice python benchmarks/hunt27_sweep.py --quick`` (seven sets, cross and frozen at 40 and
 100 rows, a few minutes), ``nice python benchmarks/hunt27_sweep.py`` (every set, one draw: the
-numbers of docs/small_data.md, "Session-27 sweep"), ``--sets bdims,minn38``, ``--modes frozen``,
+numbers of docs/evidence/small_data_log.md, "Session-27 sweep"), ``--sets bdims,minn38``, ``--modes frozen``,
 ``--models nb``, ``--sizes 40``, ``--seeds 3``, ``--first-seed 1``, ``--no-fixed``, ``--csv FILE``,
 ``--from-csv A.csv``, ``--list``.
 

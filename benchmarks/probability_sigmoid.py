@@ -1,5 +1,5 @@
 """Platt scaling of the probability itself (not of its log-odds) as a candidate of
-``CalibrationWrapper(method="auto")``: measured on real draws, not taken (docs/small_data.md,
+``CalibrationWrapper(method="auto")``: measured on real draws, not taken (docs/evidence/small_data_log.md,
 "Probability-scale sigmoid for coarse scores").
 
 scikit-learn's ``CalibratedClassifierCV(method="sigmoid")`` fits Platt's sigmoid on a model's

@@ -1,6 +1,6 @@
 """PriorShiftWrapper before ``adapt`` where the likelihood-ratio test keeps the model's own
 probabilities: one fit per draw, and the test log loss of the outputs the session-27 rules
-choose between (docs/prior_shift.md, "Before adapt: the session-27 changes").
+choose between (docs/evidence/prior_shift_log.md, "Before adapt: the session-27 changes").
 
 For every frozen draw: scikit-learn's ``CalibratedClassifierCV(method="sigmoid")`` (``sig``), the
 model's own probabilities (``own``), the wrapper's output (``cur``), the kept output (the

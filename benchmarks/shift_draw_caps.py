@@ -1,4 +1,4 @@
-"""Milder per-draw caps on the evidence gate, measured on the same draws (docs/prior_shift.md,
+"""Milder per-draw caps on the evidence gate, measured on the same draws (docs/evidence/prior_shift_log.md,
 "Milder per-draw caps (twenty-third session)").
 
 Step 1 runs a benchmark once with the library as it is and keeps, per ``adapt``, the
@@ -22,7 +22,7 @@ loss to 1e-15). Rules are written against the share *before* the session-23 cap
 ``shift_real_hunt25.py`` (the named sets in that order; the file is rewritten after every set).
 ``band`` scores the session-26 rules for weak evidence between p = 0.05 and 0.10 (a warning
 only, caps tapering from 2 % at p = 0.10 to none at 0.05, a limit scaled by a Bayes-factor
-bound, a hard cap at 0.05; docs/prior_shift.md, "Weak-evidence draws between p = 0.05 and 0.10
+bound, a hard cap at 0.05; docs/evidence/prior_shift_log.md, "Weak-evidence draws between p = 0.05 and 0.10
 (session 26)").
 
 Files go to ``--dir`` (default /tmp/shift_draw_caps). ``evidence`` repeats the draws of

@@ -1,4 +1,4 @@
-"""The per-draw variant of the evidence gate, measured (not the default; docs/prior_shift.md,
+"""The per-draw variant of the evidence gate, measured (not the default; docs/evidence/prior_shift_log.md,
 "One draw's harm when nothing moved").
 
 The default rule bounds the *expected* harm under no shift (``max_harm``). This script swaps

@@ -6,7 +6,7 @@ labelled and unlabelled rows (both sides redrawn, the shares the same: nothing m
 the mean, 95th percentile and worst of adapted / no adjustment - 1 beside the expected harm
 ``max_harm`` promises, the share of draws above 2 %, how often the rule moved, and, on the moved
 draws, the harm predicted by ``draw_harm`` (first- and second-order terms) against the
-realised one (docs/prior_shift.md, "One draw's harm when nothing moved").
+realised one (docs/evidence/prior_shift_log.md, "One draw's harm when nothing moved").
 
 Run: PYTHONPATH=$PWD nice python benchmarks/shift_no_shift_draws.py [--set ad_data] [--model lr]
 [--draws 120]

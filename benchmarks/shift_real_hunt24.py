@@ -44,7 +44,7 @@ normalised-weight twin moved.
 Run: nice python benchmarks/shift_real_hunt24.py [--seeds 2] [--sets NAME ...] [--out FILE.csv]
      nice python benchmarks/shift_real_hunt24.py --summary FILE.csv
 (``--seeds 2``: 2,532 cells, about 20 minutes on a loaded machine as two processes splitting
-``--sets``; the CSV is written after every set. Results: docs/prior_shift.md, "The session-24
+``--sets``; the CSV is written after every set. Results: docs/evidence/prior_shift_log.md, "The session-24
 hunt".)
 """
 

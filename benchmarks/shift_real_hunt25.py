@@ -48,7 +48,7 @@ Run: nice python benchmarks/shift_real_hunt25.py [--seeds 2] [--sets NAME ...] [
                                                                logistic regression and forest)
      nice python benchmarks/shift_real_hunt25.py --summary FILE.csv
 (``--seeds 2``: 3,192 cells, about 55 minutes as five processes splitting ``--sets`` on a machine
-at load 25; the CSV is written after every set. Results: docs/prior_shift.md, "The session-25
+at load 25; the CSV is written after every set. Results: docs/evidence/prior_shift_log.md, "The session-25
 hunt".)
 """
 

@@ -38,7 +38,7 @@ Run: nice python benchmarks/shift_real_hunt26.py [--seeds 2] [--sets NAME ...] [
                                                            (redraws of a bad cell, fresh seeds)
      nice python benchmarks/shift_real_hunt26.py --summary FILE.csv
 (``--seeds 2``: 3,720 cells, about 45 minutes as five processes splitting ``--sets`` on the
-machine at load 13-18; the CSV is written after every set. Results: docs/prior_shift.md,
+machine at load 13-18; the CSV is written after every set. Results: docs/evidence/prior_shift_log.md,
 "The session-26 hunt".)
 """
 

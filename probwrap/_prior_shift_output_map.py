@@ -13,19 +13,19 @@ the same held-out probabilities, choosing among the smooth maps (temperature, Pl
 scaling: :data:`OUTPUT_MAP_CANDIDATES`) on folds fixed by the rows (:func:`output_map_folds`),
 so that the choice draws nothing at random and the Dask and Spark fits, which bring a small
 set's rows, make the in-memory choice. The prior estimate keeps ``BiasCorrectedScaling``. Measured in
-docs/prior_shift.md, "Before adapt on small labelled sets".
+docs/evidence/prior_shift_log.md, "Before adapt on small labelled sets".
 
 Since the twenty-sixth session the same map also serves two more cases — a naive Bayes whose
 held-out probabilities are mostly exactly 0 or 1 (``"saturated"``), and every small set of more
 than two classes (``"more classes"``) — and a coarse grid of probabilities (a forest's) kept by
 the likelihood-ratio test gives way to the map where the map sharpens it by a scale of at
 least :data:`GRID_SHARPEN_SCALE` (:func:`under_confident_grid`). Measured in
-docs/prior_shift.md, "Before adapt: the session-26 changes".
+docs/evidence/prior_shift_log.md, "Before adapt: the session-26 changes".
 
 Since the twenty-seventh session the model's own probabilities kept by the test also give way
 to the map where the map softens them (scale below 1) and the labelled rows carry at least
 :data:`INFORMED_ROWS` rows' worth of information on the map's intercept
-(:func:`informed_softening`). Measured in docs/prior_shift.md, "Before adapt: the session-27
+(:func:`informed_softening`). Measured in docs/evidence/prior_shift_log.md, "Before adapt: the session-27
 changes".
 """
 
@@ -56,7 +56,7 @@ OUTPUT_MAP_MAX_ROWS = 100
 #: logistic regression and boosting changed and 13 got worse (penguins' boosting on 20 rows
 #: 0.82 -> 0.94x the sigmoid; their geometric means 0.9303 -> 0.9325 and 0.9990 -> 1.0027), while
 #: every one of them had its smallest probability above ``b ** 1.82``; naive Bayes reaches far
-#: below (``b ** 2`` to ``b ** 110``). Measured in docs/prior_shift.md, "Before adapt on small
+#: below (``b ** 2`` to ``b ** 110``). Measured in docs/evidence/prior_shift_log.md, "Before adapt on small
 #: labelled sets".
 RESOLUTION_POWER = 2.0
 
@@ -65,7 +65,7 @@ RESOLUTION_POWER = 2.0
 #: probabilities have underflowed for most rows, the held-out log-odds are mostly the two
 #: clipped values, and the map chosen by folds (Platt or beta scaling, mostly) replaces the
 #: map with its scale held toward the model's own confidence. Measured on the twenty-third
-#: session's hunt (benchmarks/hunt23_sweep.py; docs/prior_shift.md, "Before adapt: the
+#: session's hunt (benchmarks/hunt23_sweep.py; docs/evidence/prior_shift_log.md, "Before adapt: the
 #: session-26 changes"): AER's NMES1988, naive Bayes cross-fitted on 40 rows, 1.31 -> 1.00x
 #: scikit-learn's sigmoid; 0.3 and 0.5 changed the same cells there, 0.7 fewer.
 SATURATED_SHARE = 0.5
@@ -75,7 +75,7 @@ SATURATED_SHARE = 0.5
 #: exact 0 and 1 included) is taken as less confident than its rows: the map then predicts
 #: where the likelihood-ratio test would keep the model's own (floored) probabilities
 #: (:func:`under_confident_grid`). Measured on frozen forests and 15-neighbour votes of 20-100
-#: labelled rows (docs/prior_shift.md, "Before adapt: the session-26 changes"): with scale
+#: labelled rows (docs/evidence/prior_shift_log.md, "Before adapt: the session-26 changes"): with scale
 #: 1.3 and above the map gave 0.87-0.96x the kept probabilities' test log loss in every band of
 #: the test's p-value, below 1.3 about 1.0x (up to 2.1x); 1.2 let a forest's worst draw rise
 #: (1.24 -> 1.34x the sigmoid), 1.5 left most of the gain.
@@ -91,7 +91,7 @@ GRID_SHARPEN_SCALE = 1.3
 #: (frozen logistic regression, 40 rows) gives 3.7 and the map 1.35 -> 1.00x scikit-learn's
 #: sigmoid. Chosen on hunt23_sweep.py's sets and shift_calibration_tiny.py's tasks (1.5 and 2
 #: measured alike, 3 kept fewer of the gains), checked on hunt24 and hunt26 sets not used for it
-#: (docs/prior_shift.md, "Before adapt: the session-27 changes").
+#: (docs/evidence/prior_shift_log.md, "Before adapt: the session-27 changes").
 INFORMED_ROWS = 2.0
 
 #: The maps the output is chosen from: the smooth ones (one, two and three parameters on the
@@ -99,7 +99,7 @@ INFORMED_ROWS = 2.0
 #: binning, isotonic regression, Venn-Abers) are left out: on scikit-learn's breast cancer with
 #: naive Bayes, 100 labelled rows (tests/test_prior_shift_tiny_tail.py's third draw), binning won
 #: the folds in 6 of 100 random fold draws and then gave 1.18x the flat floor's test log loss
-#: (temperature scaling, chosen in 93: 0.78x). Measured in docs/prior_shift.md, "Before adapt
+#: (temperature scaling, chosen in 93: 0.78x). Measured in docs/evidence/prior_shift_log.md, "Before adapt
 #: on small labelled sets".
 OUTPUT_MAP_CANDIDATES = ("temperature", "platt", "beta")
 
@@ -141,7 +141,7 @@ def contradicted_confidence(proba: np.ndarray, y_idx: np.ndarray, w: np.ndarray)
     probabilities. On 345 draws of twelve multiclass sets (20, 40 and 100 labelled rows;
     logistic regression, forest, naive Bayes; frozen or cross-fitted) the map chosen by folds
     lowered the test log loss over scikit-learn's sigmoid in geometric mean, in the worst
-    draw and in the count of draws above 1.10x (docs/prior_shift.md, "Before adapt: the
+    draw and in the count of draws above 1.10x (docs/evidence/prior_shift_log.md, "Before adapt: the
     session-26 changes").
     """
     from .calibration._base import count_weights
@@ -187,7 +187,7 @@ def under_confident_grid(proba: np.ndarray, w: np.ndarray, scale: float) -> bool
     none above 0 below the row bound ``b = 1 / (4 (N + 1))`` (a forest's multiples of
     ``1 / n_trees``, a nearest-neighbour vote) — and the map's scale at least
     :data:`GRID_SHARPEN_SCALE` although its prior holds it toward 1: the floored grid is
-    less confident than the labelled rows say. Measured in docs/prior_shift.md, "Before
+    less confident than the labelled rows say. Measured in docs/evidence/prior_shift_log.md, "Before
     adapt: the session-26 changes" (DAAG's ais, a frozen forest on 40 rows: 1.42 -> 0.85x
     scikit-learn's sigmoid)."""
     from .calibration._base import count_weights
@@ -236,7 +236,7 @@ def informed_softening(proba: np.ndarray, w: np.ndarray, calibrator: Any) -> boo
     rows). A confident model right on few rows (its probabilities near 0 and 1, ``q (1 - q)``
     small) leaves the map's intercept loosely tied and is kept, as the test said; a model
     whose probabilities the rows resolve (a weak logistic regression on 40 rows) is softened.
-    Measured in docs/prior_shift.md, "Before adapt: the session-27 changes"."""
+    Measured in docs/evidence/prior_shift_log.md, "Before adapt: the session-27 changes"."""
     from .calibration._base import count_weights
 
     p = np.asarray(proba, dtype=float)

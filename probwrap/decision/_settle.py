@@ -125,7 +125,7 @@ def settle_cutoff(
     Until session 21 the test was the normal approximation to the paired per-row difference of
     the two rules' costs (``excess`` over ``excess_se``, still reported): with a handful of
     positives among the rows between the cutoffs it rejected on a few negative rows and none
-    of the rare, dear positive rows (docs/small_data.md, "cost rules on the newer sets").
+    of the rare, dear positive rows (docs/evidence/small_data_log.md, "cost rules on the newer sets").
 
     Parameters
     ----------

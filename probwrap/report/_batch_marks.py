@@ -4,7 +4,7 @@ mark where the estimate was kept near the source share for lack of rows.
 On a small batch EM's estimate is drawn toward the source share by ``prior_strength``
 pseudo-rows (``PriorEstimate.pseudo_rows``), so a batch of a few rows reads close to the
 source share whatever its rows say; the command line marks such batches (``probwrap
-prevalence``, docs/prior_shift.md, "Small batches"), and the page marks the same ones, by the
+prevalence``, docs/evidence/prior_shift_log.md, "Small batches"), and the page marks the same ones, by the
 same rule (:func:`probwrap.shift._by_batch.held_near_source`: the pull moved the share by at
 least 0.01 from the rows-alone estimate ``ml_prior``), with the rows-alone estimate beside it.
 Plain table text: no colours or symbols carry the meaning.

@@ -14,7 +14,7 @@ was 2.07 times statsmodels' group-robust one, the bootstrap of whole districts 0
   (:func:`probwrap._heldout.feature_cells`, used by the wrappers' folds) — unless those rows
   are a frequency table (:func:`frequency_table_levels`): combinations of a few levels per
   column, each with a count, are covariate patterns of independent cases, not sampled units,
-  and clustering on them overstates the error (R's esoph, docs/prior_shift.md "Counts (k of
+  and clustering on them overstates the error (R's esoph, docs/evidence/prior_shift_log.md "Counts (k of
   n)"). With whole-number counts (at most ``MAX_TABLE_CASES`` cases) such a table is read as
   its cases, the rows repeated by their counts, and the report resamples cases
   (:func:`frequency_cases`; a note says so; since 4 December 2026, before it was read as

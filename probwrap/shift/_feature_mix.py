@@ -82,7 +82,7 @@ class FeatureMixtureMisfitWarning(UserWarning):
     says only the class shares moved; here the rows of a class look different too (a batch
     drawn from a subgroup, a region, a new instrument), so the estimated shares and their
     interval may be off, by more than the interval says. Measured in
-    ``benchmarks/shift_feature_check.py`` (docs/prior_shift.md, "Features that do not fit
+    ``benchmarks/shift_feature_check.py`` (docs/evidence/prior_shift_log.md, "Features that do not fit
     the class mixture").
     """
 
@@ -440,7 +440,7 @@ def feature_mixture_misfit(
         Folds of the cross-fitting (at least 2), stratified on the side. With two folds
         (each half trains the discriminator that scores the other) the bound on the pooled
         statistic's spread is nearly tight; more folds train on more rows but the bound
-        grows conservative (docs/prior_shift.md, "Features that do not fit the class
+        grows conservative (docs/evidence/prior_shift_log.md, "Features that do not fit the class
         mixture").
     level : float or None, default=0.01
         Warn with :class:`FeatureMixtureMisfitWarning` when ``combined_pvalue`` (the

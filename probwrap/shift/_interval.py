@@ -237,7 +237,7 @@ def score_interval(
     argue against it (a low-scoring row's score at a prior near 1 is large), so the test could
     not reject any prior and the interval of a rare class reached 1 in most batches, while it
     under-covered where a skewed score's variance came out small (see
-    ``benchmarks/small_batch_interval.py`` and docs/prior_shift.md, "Small batches").
+    ``benchmarks/small_batch_interval.py`` and docs/evidence/prior_shift_log.md, "Small batches").
     From ``null_variance_below`` rows on the two variances agree at the true prior and the
     rows' own one, which holds whatever the prior-shift model, is kept. Between
     ``null_variance_fade_from`` and ``null_variance_below`` rows the two are blended, the
@@ -247,7 +247,7 @@ def score_interval(
     convex combination of two variances that both hold at the true prior, so that the
     interval moves continuously with either count (as a step at 100 rows its ends moved by
     up to 0.55 between 99.99 and 100.01 rows on scikit-learn's breast cancer set;
-    docs/prior_shift.md, "Small batches: the 100-row switch and broken assumptions").
+    docs/evidence/prior_shift_log.md, "Small batches: the 100-row switch and broken assumptions").
 
     With ``cells`` / ``source_cells`` (aggregated counts: the rows of one group share a cell)
     a side's variance is the cluster-robust (sandwich) variance of its mean with the cells as

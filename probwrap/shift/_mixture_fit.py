@@ -17,7 +17,7 @@ over its Kish count (the three samples independent). Minimising it over the one 
 Neyman's (1949) minimum chi-square, here with the covariance re-evaluated at every ``pi`` (the
 continuously updated form of Hansen's 1982 over-identification statistic): chi-square with
 ``bins - 2`` degrees of freedom under the null (one per free bin share, less one for ``pi``).
-Measured in ``benchmarks/small_batch_switch.py --part broken`` (docs/prior_shift.md,
+Measured in ``benchmarks/small_batch_switch.py --part broken`` (docs/evidence/prior_shift_log.md,
 "A level-holding check of the batch's shape").
 """
 
@@ -47,7 +47,7 @@ class ClassMixtureMisfitWarning(UserWarning):
     confidently wrong. ``PriorShiftWrapper.adapt`` warns when the batch's calibrated scores,
     counted in 3-6 bins, differ from every mixture of the labelled classes by more than the
     sampling error of both sides (the labelled rows' own included) allows. Measured in
-    ``benchmarks/small_batch_switch.py --part broken`` (docs/prior_shift.md, "A level-holding
+    ``benchmarks/small_batch_switch.py --part broken`` (docs/evidence/prior_shift_log.md, "A level-holding
     check of the batch's shape").
     """
 

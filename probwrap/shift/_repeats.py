@@ -21,7 +21,7 @@ its upper bound and ``adapt`` the larger ``q`` of the source shares and the rows
 Where the rows' own design effect of their repeats, ``sum_g W_g^2 / sum_i w_i^2`` (``W_g`` the
 weight of a group of identical rows), is well above it, ``PriorShiftWrapper.adapt`` and
 ``monitor`` warn (:class:`RepeatedRowsWarning`, one rule for every path:
-:func:`repeats_of_rows`; docs/prior_shift.md, "Confident misses on real sets");
+:func:`repeats_of_rows`; docs/evidence/prior_shift_log.md, "Confident misses on real sets");
 ``cells`` grouping the identical rows then count each group once. "Well above" allows for the
 chance spread of the count of tied pairs, which is large where a few values hold many rows
 (rounded or clipped scores): :func:`repeats_beyond_chance`, with how the labelled rows' identical

@@ -270,7 +270,7 @@ def draw_capped_weight(harm_scale: float | None, ratio: float | None,
     ``w' = sqrt(ratio**2 + limit / (scale * T)) - ratio``.
 
     ``PriorShiftWrapper.adapt`` applies it where the shift test's p-value is at least 0.10
-    (docs/prior_shift.md, "Milder per-draw caps (twenty-third session)"): on such evidence
+    (docs/evidence/prior_shift_log.md, "Milder per-draw caps (twenty-third session)"): on such evidence
     the rows may well not have moved, and a move then costs them the first-order term of
     :func:`null_move_ratio` that ``max_harm`` (an average over draws) does not carry.
 
@@ -338,7 +338,7 @@ def null_move_ratio(
 
 def draw_cutoff(harm_scale: float | None, ratio: float | None, df: int, draw_harm: float,
                 cutoff: float, level: float = 0.95) -> float:
-    r"""Not the default (measured in docs/prior_shift.md, "One draw's harm when nothing moved";
+    r"""Not the default (measured in docs/evidence/prior_shift_log.md, "One draw's harm when nothing moved";
     ``benchmarks/shift_draw_harm.py``): the cutoff ``c`` (at least ``cutoff``) at which a draw with no shift and the statistic
     at its ``level`` quantile ``q`` is hurt by at most ``draw_harm`` (relative log loss):
     ``scale * ((q - a)**2 / q + 2 * ratio * (q - a)) <= draw_harm`` with ``a = c * df``
