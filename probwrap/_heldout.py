@@ -1072,10 +1072,12 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
 
     def _warn_overdispersed_table(self, ho: HeldOutPredictions, p: np.ndarray | None,
                                   what: str, *, stacklevel: int = 5,
-                                  remedy: str | None = None) -> None:
+                                  remedy: str | None = None,
+                                  fit_remedy: str | None = None) -> None:
         """Warn when a binary count table read as cases (a frozen model's, or one
         cross-fitted by its cases) has groups of identical features that vary more than
-        binomial around the held-out probabilities ``p`` (of the second class)
+        binomial around the held-out probabilities ``p`` (of the second class), or that a Platt
+        map of them fits poorly (lack of fit, told apart since session 28)
         (:func:`probwrap._weights.warn_overdispersed_table`)."""
         from ._weights import warn_overdispersed_table
 
@@ -1089,7 +1091,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         else:
             return
         warn_overdispersed_table(p, ho.y_index, ho.sample_weight, groups, type(self).__name__,
-                                 what, stacklevel=stacklevel, remedy=remedy)
+                                 what, stacklevel=stacklevel, remedy=remedy,
+                                 fit_remedy=fit_remedy)
 
     def _splits_keeping_cells(
         self, splits: list, fold: np.ndarray, cells: np.ndarray, y_index: np.ndarray

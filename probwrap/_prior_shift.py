@@ -640,7 +640,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             rows. None: every row is its own unit (cells are never found on their own here,
             though the folds keep such rows together); a two-class count table then read as
             its cases (a frozen model) whose groups vary more than binomial draws a
-            ``UserWarning`` (docs/evidence/prior_shift_log.md, "Count tables in adapt (session 27)").
+            ``UserWarning`` (docs/evidence/prior_shift_log.md, "Count tables in adapt (session 27)"),
+            which since session 28 says lack of fit of the map instead when a flexible map
+            of the probabilities fits the groups binomially.
         **fit_params : dict
             Further parameters for the estimator's ``fit``.
 
@@ -726,11 +728,17 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             self._warn_overdispersed_table(
                 ho, ho.values[:, 1], "`adapt`'s interval and shift test",
                 stacklevel=4,
-                remedy="If so, pass `cells=` to fit (the groups as the units of the interval "
+                remedy="If the cases share causes, pass `cells=` to fit (the groups as the "
+                       "units of the interval "
                        "and the shift test: the clustered reading; PriorShiftWrapper.fit's "
                        "docstring, docs/evidence/prior_shift_log.md \"Counts (k of n)\") or the weights "
                        "divided by their sum (the relative reading: the table's rows count by "
-                       "Kish's effective size).")
+                       "Kish's effective size).",
+                fit_remedy="This wrapper's own map is of Platt's form (a scale and a bias on "
+                           "the log-odds), so its posteriors, and adapt's prior estimate that "
+                           "needs calibrated ones, carry the misfit: a better-fitting model, or "
+                           "one calibrated first with a more flexible map and passed frozen, "
+                           "is the remedy; the weights and `cells=` need no change.")
         if ho.n_folds >= 2 and est.calibrator_ is not None:
             # A base model refit here: the likelihood-ratio test judged the fold models'
             # held-out probabilities, not the refit model's that predict_proba would return,

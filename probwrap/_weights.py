@@ -17,7 +17,7 @@ from ._validation import COUNT_TABLE_MAX_CASES, case_rows, counted_rows, shared_
 from .calibration._base import WeightScaleWarning, count_weights
 
 __all__ = ["COUNT_TABLE_MAX_CASES", "case_rows", "count_scale_weights", "counted_rows",
-           "shared_factor", "table_dispersion", "warn_count_reading", "warn_count_summary",
+           "natural_spline_basis", "shared_factor", "table_dispersion", "warn_count_reading", "warn_count_summary",
            "warn_overdispersed_table", "warn_shared_factor_table", "whole_counts"]
 
 
@@ -116,13 +116,84 @@ OVERDISPERSION_LIMIT = 2.0
 OVERDISPERSION_PVALUE = 1e-3
 #: Fewest groups (rows of identical features, both labels counted) for the check.
 OVERDISPERSION_MIN_GROUPS = 10
+#: Knots of the flexible map that tells overdispersion from lack of fit of the map (session
+#: 28): a natural cubic spline of the held-out log-odds with this many knots, i.e. this many
+#: parameters (intercept and slope included). 5 was chosen on
+#: ``benchmarks/count_table_dispersion28.py``'s draws: of 30 binomial tables around a
+#: non-logistic map that a Platt map flagged it flagged none (4 knots: 1), and it kept 12 of
+#: the 14 flags on beta-binomial tables (7 knots: 10; an isotonic fit: 8).
+FLEXIBLE_MAP_KNOTS = 5
+
+
+def _table_arrays(p, y, w, groups):
+    """Held-out log-odds, labels, counts and group codes of the rows of positive weight."""
+    p = np.clip(np.asarray(p, dtype=float), 1e-12, 1 - 1e-12)
+    y = np.asarray(y, dtype=float)
+    w = np.asarray(w, dtype=float)
+    groups = np.asarray(groups, dtype=np.intp)
+    keep = w > 0
+    p, y, w, groups = p[keep], y[keep], w[keep], groups[keep]
+    _, groups = np.unique(groups, return_inverse=True)
+    n_groups = int(groups.max()) + 1 if groups.size else 0
+    return np.log(p) - np.log1p(-p), y, w, groups, n_groups
+
+
+def _binomial_fit(design: np.ndarray, y: np.ndarray, w: np.ndarray,
+                  ridge: float = 0.0) -> np.ndarray | None:
+    """Fitted probabilities of a binomial GLM (logit link) of ``y`` on ``design`` with case
+    counts ``w``, by Newton's method; ``ridge`` (times the total count) on all but the first
+    column keeps it defined where part of the scores has one label only. None if it fails."""
+    from scipy.special import expit
+
+    beta = np.zeros(design.shape[1])
+    penalty = np.full(design.shape[1], ridge * float(w.sum()))
+    penalty[0] = 0.0
+    for _ in range(100):
+        q = expit(design @ beta)
+        grad = design.T @ (w * (y - q)) - penalty * beta
+        hess = design.T @ (design * (w * q * (1 - q))[:, None]) + np.diag(penalty)
+        try:
+            step = np.linalg.solve(hess, grad)
+        except np.linalg.LinAlgError:
+            return None
+        beta = beta + step
+        if not np.all(np.isfinite(beta)):
+            return None
+        if np.max(np.abs(step)) < 1e-10:
+            break
+    return expit(design @ beta)
+
+
+def natural_spline_basis(s: np.ndarray, knots: np.ndarray) -> np.ndarray:
+    """Natural cubic spline basis of ``s`` with ``knots`` (sorted, at least 3): intercept,
+    ``s`` and ``len(knots) - 2`` truncated-power terms (Hastie, Tibshirani & Friedman 2009,
+    eqs. 5.4-5.5, from memory; the space is checked against SciPy's natural cubic spline), on
+    ``s`` rescaled to the knots' range; linear beyond the outer knots.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> natural_spline_basis(np.linspace(0, 1, 4), np.array([0.0, 0.5, 1.0])).shape
+    (4, 3)
+    """
+    lo, hi = float(knots[0]), float(knots[-1])
+    x = (np.asarray(s, dtype=float) - lo) / (hi - lo)
+    k = (np.asarray(knots, dtype=float) - lo) / (hi - lo)
+    last = k.shape[0] - 1
+
+    def d(j: int) -> np.ndarray:
+        return (np.maximum(x - k[j], 0.0) ** 3 - np.maximum(x - k[last], 0.0) ** 3) / (
+            k[last] - k[j])
+
+    return np.column_stack([np.ones_like(x), x] + [d(j) - d(last - 1) for j in range(last - 1)])
 
 
 def table_dispersion(
-    p: np.ndarray, y: np.ndarray, w: np.ndarray, groups: np.ndarray
+    p: np.ndarray, y: np.ndarray, w: np.ndarray, groups: np.ndarray, *, flexible: bool = False
 ) -> tuple[float, float, int] | None:
     """Pearson's dispersion of a count table's groups around a Platt map of held-out
-    probabilities: ``(dispersion, p-value, groups)``, or None when it cannot be judged.
+    probabilities (or, with ``flexible``, around a flexible map of them):
+    ``(dispersion, p-value, groups)``, or None when it cannot be judged.
 
     ``p`` is each held-out row's probability of the second class, ``y`` its 0/1 label, ``w``
     its whole-number count, ``groups`` the group of each row (rows of identical features: a
@@ -135,6 +206,20 @@ def table_dispersion(
     tail with ``G - 2`` degrees of freedom. With one row probability per group this is
     statsmodels' ``GLM(Binomial).pearson_chi2 / df_resid`` on the groups (tested).
 
+    ``flexible=True`` (session 28) replaces the Platt map by a binomial GLM on a natural cubic
+    spline of the log-odds with :data:`FLEXIBLE_MAP_KNOTS` knots at quantiles of the distinct
+    log-odds (one rate per distinct probability when there are no more of them than knots),
+    and divides by ``G`` minus its parameters. A Platt map's dispersion is large both when the
+    groups vary more than binomial (overdispersion) and when the map's shape is wrong (lack
+    of fit); the flexible map's stays large only when groups of like probabilities differ
+    (overdispersion, or a model that misses what sets them apart). Fitting a richer mean model
+    before reading the residual scale as overdispersion is the usual GLM practice (McCullagh &
+    Nelder 1989, sec. 4.5; Williams 1982, "Extra-binomial variation in logistic linear
+    models", Applied Statistics 31; both from memory). A ridge of ``1e-9`` times the total
+    count on the spline terms keeps the fit defined where part of the scores has one label
+    only, where the unpenalised fit fails (statsmodels' binomial GLM on the same spline space
+    is the reference, tested).
+
     Examples
     --------
     >>> import numpy as np
@@ -146,79 +231,118 @@ def table_dispersion(
     >>> d, pv, g = table_dispersion(p, y, w, np.repeat(np.arange(40), 2))
     >>> g, bool(0.5 < d < 2)
     (40, True)
+    >>> d, pv, g = table_dispersion(p, y, w, np.repeat(np.arange(40), 2), flexible=True)
+    >>> g, bool(0.5 < d < 2)
+    (40, True)
     """
     from scipy import stats
-    from scipy.special import expit
 
-    p = np.clip(np.asarray(p, dtype=float), 1e-12, 1 - 1e-12)
-    y = np.asarray(y, dtype=float)
-    w = np.asarray(w, dtype=float)
-    groups = np.asarray(groups, dtype=np.intp)
-    keep = w > 0
-    p, y, w, groups = p[keep], y[keep], w[keep], groups[keep]
-    _, groups = np.unique(groups, return_inverse=True)
-    n_groups = int(groups.max()) + 1 if groups.size else 0
+    s, y, w, groups, n_groups = _table_arrays(p, y, w, groups)
     if n_groups < OVERDISPERSION_MIN_GROUPS:
         return None
-    s = np.log(p) - np.log1p(-p)
-    design = np.column_stack([np.ones_like(s), s])
-    beta = np.zeros(2)
-    for _ in range(50):
-        q = expit(design @ beta)
-        grad = design.T @ (w * (y - q))
-        hess = design.T @ (design * (w * q * (1 - q))[:, None])
-        try:
-            step = np.linalg.solve(hess, grad)
-        except np.linalg.LinAlgError:
-            return None
-        beta = beta + step
-        if not np.all(np.isfinite(beta)):
-            return None
-        if np.max(np.abs(step)) < 1e-10:
-            break
-    q = expit(design @ beta)
+    if not flexible:
+        n_params = 2
+        q = _binomial_fit(np.column_stack([np.ones_like(s), s]), y, w)
+    else:
+        distinct = np.unique(s)
+        if distinct.shape[0] <= FLEXIBLE_MAP_KNOTS:
+            # one rate per distinct probability: the saturated map of the scores
+            n_params = int(distinct.shape[0])
+            code = np.searchsorted(distinct, s)
+            q = (np.bincount(code, weights=w * y, minlength=n_params)
+                 / np.bincount(code, weights=w, minlength=n_params))[code]
+        else:
+            knots = np.quantile(distinct, np.linspace(0.0, 1.0, FLEXIBLE_MAP_KNOTS))
+            n_params = FLEXIBLE_MAP_KNOTS
+            basis = natural_spline_basis(s, knots)
+            q = _binomial_fit(basis, y, w)
+            if q is None:
+                q = _binomial_fit(basis, y, w, ridge=1e-9)
+    if q is None:
+        return None
     observed = np.bincount(groups, weights=w * y, minlength=n_groups)
     expected = np.bincount(groups, weights=w * q, minlength=n_groups)
     variance = np.bincount(groups, weights=w * q * (1 - q), minlength=n_groups)
     ok = variance > 1e-12
-    dof = int(ok.sum()) - 2
-    if dof < OVERDISPERSION_MIN_GROUPS - 2:
+    dof = int(ok.sum()) - n_params
+    if dof < OVERDISPERSION_MIN_GROUPS - n_params:
         return None
     x2 = float(np.sum((observed[ok] - expected[ok]) ** 2 / variance[ok]))
     return x2 / dof, float(stats.chi2.sf(x2, dof)), int(ok.sum())
 
 
+def _flagged(res: tuple[float, float, int] | None) -> bool:
+    return res is not None and res[0] > OVERDISPERSION_LIMIT and res[1] < OVERDISPERSION_PVALUE
+
+
 def warn_overdispersed_table(
     p: np.ndarray, y: np.ndarray, w: np.ndarray, groups: np.ndarray | None, owner: str,
     what: str, *, stacklevel: int = 4, remedy: str | None = None,
+    fit_remedy: str | None = None,
 ) -> float | None:
     """Warn (``UserWarning`` naming ``owner``) when a count table read as cases has groups
-    that vary more than binomial (:func:`table_dispersion` above
-    :data:`OVERDISPERSION_LIMIT`, p below :data:`OVERDISPERSION_PVALUE`): ``what`` (the
-    steps that count its cases) is then too sure. ``remedy``: the warning's last sentence
-    (None: pass the weights divided by their sum). Returns the dispersion (None when not
-    judged)."""
+    that do not follow the held-out probabilities binomially (:func:`table_dispersion` above
+    :data:`OVERDISPERSION_LIMIT`, p below :data:`OVERDISPERSION_PVALUE`), saying which of two
+    things it is (session 28):
+
+    - overdispersion, when the groups vary more than binomial around a flexible map of the
+      probabilities too (``table_dispersion(..., flexible=True)`` flagged as well): ``what``
+      (the steps that count its cases) is then too sure; ``remedy`` is that warning's last
+      sentence (None: pass the weights divided by their sum);
+    - lack of fit of the map, when they are binomial around the flexible map: the case
+      reading is right and the map's shape (or the model) is what is wrong; ``fit_remedy``
+      is that warning's last sentence (None: a more flexible map or a better model).
+
+    Returns the Platt map's dispersion (None when not judged)."""
     if groups is None:
         return None
     res = table_dispersion(p, y, w, groups)
     if res is None:
         return None
     dispersion, pvalue, n_groups = res
-    if dispersion > OVERDISPERSION_LIMIT and pvalue < OVERDISPERSION_PVALUE:
+    if not _flagged(res):
+        return dispersion
+    flex = table_dispersion(p, y, w, groups, flexible=True)
+    if flex is not None and not _flagged(flex):
         warnings.warn(
-            f"{owner}: the count table's {n_groups} groups (rows with identical features) vary "
-            f"more than binomial around the held-out probabilities (Pearson dispersion "
-            f"{dispersion:.3g}, p = {pvalue:.2g}). Either the model misses what sets the "
-            "groups apart, or the cases of a group share causes (pupils of one school, parcels "
-            f"of one route); then every case counts as independent evidence in {what}, about "
-            f"{dispersion:.3g} times too much. "
-            + (remedy if remedy is not None else
-               "If so, pass the weights divided by their sum, so that the table's rows count "
-               "by Kish's effective size (docs/aggregated_outcomes.md, \"When groups vary more "
-               "than binomial\")."),
+            f"{owner}: the count table's {n_groups} groups (rows with identical features) are "
+            f"not binomial around a Platt map of the held-out probabilities (Pearson "
+            f"dispersion {dispersion:.3g}, p = {pvalue:.2g}) but are around a flexible map of "
+            f"them (a natural cubic spline of their log-odds: dispersion {flex[0]:.3g}, p = "
+            f"{flex[1]:.2g}). That is lack of fit of the map's shape, not groups whose cases "
+            f"share causes: counting the cases one by one in {what} is right. "
+            + (fit_remedy if fit_remedy is not None else
+               "A map more flexible than Platt's (isotonic, binning or beta) or a better-fitting "
+               "model is the remedy; the weights need no change (docs/aggregated_outcomes.md, "
+               "\"Overdispersion or lack of fit (session 28)\")."),
             UserWarning,
             stacklevel=stacklevel,
         )
+        return dispersion
+    if flex is not None:
+        scale = flex[0]
+        measured = (f"Pearson dispersion {dispersion:.3g} around a Platt map of them, "
+                    f"{flex[0]:.3g} around a flexible one, a natural cubic spline of their "
+                    f"log-odds; p = {flex[1]:.2g}")
+    else:
+        scale = dispersion
+        measured = (f"Pearson dispersion {dispersion:.3g}, p = {pvalue:.2g}; too few "
+                    "distinct probabilities for a flexible map, so lack of fit of the map is "
+                    "not ruled out")
+    warnings.warn(
+        f"{owner}: the count table's {n_groups} groups (rows with identical features) vary "
+        f"more than binomial around the held-out probabilities, even around a flexible map of "
+        f"them: overdispersion ({measured}). The cases of a group share causes (pupils of "
+        "one school, parcels of one route), or the model misses what sets the groups apart "
+        "(with one count per group the two look alike); either way every case counts as "
+        f"independent evidence in {what}, about {scale:.3g} times too much. "
+        + (remedy if remedy is not None else
+           "If the cases share causes, pass the weights divided by their sum, so that the "
+           "table's rows count by Kish's effective size (docs/aggregated_outcomes.md, \"When "
+           "groups vary more than binomial\")."),
+        UserWarning,
+        stacklevel=stacklevel,
+    )
     return dispersion
 
 
