@@ -293,6 +293,40 @@ def _adjacent_equal(sorted_keys: np.ndarray, block: int = 1 << 16) -> bool:
 _HASH_ROWS = object()
 
 
+#: Most feature columns the count-table check adds as linear terms (session 28).
+TABLE_FEATURES_MAX = 100
+
+
+def numeric_features(X: Any) -> np.ndarray | None:
+    """``X`` as a 2-d float array when it is a 2-d NumPy array or a DataFrame of numbers
+    (booleans count) with at most :data:`TABLE_FEATURES_MAX` columns and finite values, else
+    None: the table's features for the check of groups that vary more than binomial
+    (:func:`probwrap._weights.warn_overdispersed_table`). Never a copy of a float array.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> numeric_features(np.array([[1, 2], [3, 4]])).dtype.kind
+    'f'
+    >>> numeric_features(np.array([["a"], ["b"]])) is None
+    True
+    """
+    try:
+        if hasattr(X, "dtypes") and hasattr(X, "to_numpy"):
+            if not all(getattr(d, "kind", "O") in "biuf" for d in np.atleast_1d(X.dtypes)):
+                return None
+            out = X.to_numpy(dtype=float)
+        elif isinstance(X, np.ndarray) and X.dtype.kind in "biuf":
+            out = np.asarray(X, dtype=float)
+        else:
+            return None
+    except (TypeError, ValueError):
+        return None
+    if out.ndim != 2 or out.shape[1] > TABLE_FEATURES_MAX or not np.all(np.isfinite(out)):
+        return None
+    return out
+
+
 def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray, *,
                   index: Any = _HASH_ROWS) -> np.ndarray | None:
     """Cell of every row (rows with identical features share one) when weighted rows with
@@ -905,7 +939,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             self.n_features_in_ = estimator.n_features_in_
         if hasattr(estimator, "feature_names_in_"):
             self.feature_names_in_ = estimator.feature_names_in_
-        return HeldOutPredictions(
+        ho = HeldOutPredictions(
             values=values,
             response=response,
             classes=self.classes_,
@@ -921,6 +955,9 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             case_cells=(copied_case_cells(X, whole_counts(sw), index=index)
                         if sw is not None and whole_counts(sw) is not None else None),
         )
+        # (for the check of groups that vary more: the table's features, session 28)
+        ho.table_features = numeric_features(X) if cells is not None else None
+        return ho
 
     #: Whether a count table's cells are split into case-level folds when the model is
     #: cross-fitted (``cv`` a number): each row's count is shared among the folds as the same
@@ -1068,6 +1105,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         ho.row_weight = sw
         groups = feature_cells(X, sw, y_index, index=index)  # (for the check of groups that vary more)
         ho.table_groups = None if groups is None else groups[row]
+        features = numeric_features(X) if groups is not None else None
+        ho.table_features = None if features is None else features[row]
         return ho
 
     def _warn_overdispersed_table(self, ho: HeldOutPredictions, p: np.ndarray | None,
@@ -1077,7 +1116,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         """Warn when a binary count table read as cases (a frozen model's, or one
         cross-fitted by its cases) has groups of identical features that vary more than
         binomial around the held-out probabilities ``p`` (of the second class), or that a Platt
-        map of them fits poorly (lack of fit, told apart since session 28)
+        map of them fits poorly (lack of fit of the map or of the model, told apart since
+        session 28, with the table's numeric features: ``ho.table_features``)
         (:func:`probwrap._weights.warn_overdispersed_table`)."""
         from ._weights import warn_overdispersed_table
 
@@ -1092,7 +1132,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             return
         warn_overdispersed_table(p, ho.y_index, ho.sample_weight, groups, type(self).__name__,
                                  what, stacklevel=stacklevel, remedy=remedy,
-                                 fit_remedy=fit_remedy)
+                                 fit_remedy=fit_remedy,
+                                 features=getattr(ho, "table_features", None))
 
     def _splits_keeping_cells(
         self, splits: list, fold: np.ndarray, cells: np.ndarray, y_index: np.ndarray

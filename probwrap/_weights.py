@@ -123,6 +123,8 @@ OVERDISPERSION_MIN_GROUPS = 10
 #: non-logistic map that a Platt map flagged it flagged none (4 knots: 1), and it kept 12 of
 #: the 14 flags on beta-binomial tables (7 knots: 10; an isotonic fit: 8).
 FLEXIBLE_MAP_KNOTS = 5
+#: Fewest residual degrees of freedom for the check with the table's features added.
+FEATURE_MIN_DOF = 5
 
 
 def _table_arrays(p, y, w, groups):
@@ -139,24 +141,42 @@ def _table_arrays(p, y, w, groups):
 
 
 def _binomial_fit(design: np.ndarray, y: np.ndarray, w: np.ndarray,
-                  ridge: float = 0.0) -> np.ndarray | None:
+                  ridge: float = 0.0, *, collinear: bool = False) -> np.ndarray | None:
     """Fitted probabilities of a binomial GLM (logit link) of ``y`` on ``design`` with case
-    counts ``w``, by Newton's method; ``ridge`` (times the total count) on all but the first
-    column keeps it defined where part of the scores has one label only. None if it fails."""
-    from scipy.special import expit
+    counts ``w``, by Newton's method with step halving (a step that raises the penalised
+    deviance is halved, up to 30 times); ``ridge`` (times the total count) on all but the
+    first column keeps it defined where part of the scores has one label only; ``collinear``:
+    the steps by least squares, for a design whose columns may be collinear (the fitted
+    probabilities are then still the maximum-likelihood ones). None if it fails."""
+    from scipy.special import expit, log_expit
 
     beta = np.zeros(design.shape[1])
     penalty = np.full(design.shape[1], ridge * float(w.sum()))
     penalty[0] = 0.0
+
+    def loss(b: np.ndarray) -> float:
+        eta = design @ b
+        return float(-(w @ (y * log_expit(eta) + (1 - y) * log_expit(-eta)))
+                     + 0.5 * penalty @ (b * b))
+
+    current = loss(beta)
     for _ in range(100):
         q = expit(design @ beta)
         grad = design.T @ (w * (y - q)) - penalty * beta
         hess = design.T @ (design * (w * q * (1 - q))[:, None]) + np.diag(penalty)
         try:
-            step = np.linalg.solve(hess, grad)
+            step = (np.linalg.lstsq(hess, grad, rcond=None)[0] if collinear
+                    else np.linalg.solve(hess, grad))
         except np.linalg.LinAlgError:
             return None
-        beta = beta + step
+        if not np.all(np.isfinite(step)):
+            return None
+        for _ in range(30):
+            trial = loss(beta + step)
+            if trial <= current + 1e-12 * abs(current):
+                break
+            step = step / 2
+        beta, current = beta + step, trial
         if not np.all(np.isfinite(beta)):
             return None
         if np.max(np.abs(step)) < 1e-10:
@@ -189,7 +209,8 @@ def natural_spline_basis(s: np.ndarray, knots: np.ndarray) -> np.ndarray:
 
 
 def table_dispersion(
-    p: np.ndarray, y: np.ndarray, w: np.ndarray, groups: np.ndarray, *, flexible: bool = False
+    p: np.ndarray, y: np.ndarray, w: np.ndarray, groups: np.ndarray, *, flexible: bool = False,
+    features: np.ndarray | None = None,
 ) -> tuple[float, float, int] | None:
     """Pearson's dispersion of a count table's groups around a Platt map of held-out
     probabilities (or, with ``flexible``, around a flexible map of them):
@@ -220,6 +241,14 @@ def table_dispersion(
     only, where the unpenalised fit fails (statsmodels' binomial GLM on the same spline space
     is the reference, tested).
 
+    ``features`` (with ``flexible``; one row per row of ``p``, numbers): the table's own
+    features enter the flexible map's GLM as linear terms (standardised; constant columns
+    dropped), and the dispersion is divided by ``G`` minus the design's rank (at least
+    :data:`FEATURE_MIN_DOF` left, else None). Groups that are binomial then differed because
+    the model misses what sets them apart (lack of fit of the model), not because their cases
+    share causes: the "most complete reasonable model" before overdispersion is read
+    (Williams 1982; McCullagh & Nelder 1989, sec. 4.5; from memory).
+
     Examples
     --------
     >>> import numpy as np
@@ -237,10 +266,32 @@ def table_dispersion(
     """
     from scipy import stats
 
+    w_all = w
     s, y, w, groups, n_groups = _table_arrays(p, y, w, groups)
     if n_groups < OVERDISPERSION_MIN_GROUPS:
         return None
-    if not flexible:
+    if features is not None:
+        if not flexible:
+            raise ValueError("`features` is read with `flexible=True` only.")
+        f = np.asarray(features, dtype=float)
+        f = f.reshape(f.shape[0], -1)[np.asarray(w_all) > 0]
+        spread = f.std(axis=0)
+        f = (f[:, spread > 0] - f[:, spread > 0].mean(axis=0)) / spread[spread > 0]
+        distinct = np.unique(s)
+        if distinct.shape[0] <= FLEXIBLE_MAP_KNOTS:
+            score = (np.searchsorted(distinct, s)[:, None] == np.arange(distinct.shape[0])
+                     ).astype(float)
+        else:
+            score = natural_spline_basis(
+                s, np.quantile(distinct, np.linspace(0.0, 1.0, FLEXIBLE_MAP_KNOTS)))
+        design = np.column_stack([score, f])
+        n_params = int(np.linalg.matrix_rank(design))
+        if n_groups - n_params < FEATURE_MIN_DOF:
+            return None
+        q = _binomial_fit(design, y, w, collinear=True)
+        if q is None:
+            q = _binomial_fit(design, y, w, ridge=1e-9, collinear=True)
+    elif not flexible:
         n_params = 2
         q = _binomial_fit(np.column_stack([np.ones_like(s), s]), y, w)
     else:
@@ -265,7 +316,8 @@ def table_dispersion(
     variance = np.bincount(groups, weights=w * q * (1 - q), minlength=n_groups)
     ok = variance > 1e-12
     dof = int(ok.sum()) - n_params
-    if dof < OVERDISPERSION_MIN_GROUPS - n_params:
+    if dof < (FEATURE_MIN_DOF if features is not None
+              else OVERDISPERSION_MIN_GROUPS - n_params):
         return None
     x2 = float(np.sum((observed[ok] - expected[ok]) ** 2 / variance[ok]))
     return x2 / dof, float(stats.chi2.sf(x2, dof)), int(ok.sum())
@@ -278,20 +330,24 @@ def _flagged(res: tuple[float, float, int] | None) -> bool:
 def warn_overdispersed_table(
     p: np.ndarray, y: np.ndarray, w: np.ndarray, groups: np.ndarray | None, owner: str,
     what: str, *, stacklevel: int = 4, remedy: str | None = None,
-    fit_remedy: str | None = None,
+    fit_remedy: str | None = None, features: np.ndarray | None = None,
 ) -> float | None:
     """Warn (``UserWarning`` naming ``owner``) when a count table read as cases has groups
     that do not follow the held-out probabilities binomially (:func:`table_dispersion` above
-    :data:`OVERDISPERSION_LIMIT`, p below :data:`OVERDISPERSION_PVALUE`), saying which of two
-    things it is (session 28):
+    :data:`OVERDISPERSION_LIMIT`, p below :data:`OVERDISPERSION_PVALUE`), saying which of
+    three things it is (session 28):
 
-    - overdispersion, when the groups vary more than binomial around a flexible map of the
-      probabilities too (``table_dispersion(..., flexible=True)`` flagged as well): ``what``
-      (the steps that count its cases) is then too sure; ``remedy`` is that warning's last
-      sentence (None: pass the weights divided by their sum);
-    - lack of fit of the map, when they are binomial around the flexible map: the case
-      reading is right and the map's shape (or the model) is what is wrong; ``fit_remedy``
-      is that warning's last sentence (None: a more flexible map or a better model).
+    - lack of fit of the map, when the groups are binomial around a flexible map of the
+      probabilities (``table_dispersion(..., flexible=True)``): the case reading is right and
+      the map's shape is what is wrong; ``fit_remedy`` is that warning's last sentence (None:
+      a more flexible map or a better model);
+    - lack of fit of the model, when they are not, but are binomial once the table's own
+      ``features`` (numbers, one row per row of ``p``; None: not tried) enter beside the
+      flexible map as linear terms: the case reading is right and the model misses what sets
+      the groups apart;
+    - overdispersion otherwise: ``what`` (the steps that count its cases) is then too sure;
+      ``remedy`` is that warning's last sentence (None: pass the weights divided by their
+      sum).
 
     Returns the Platt map's dispersion (None when not judged)."""
     if groups is None:
@@ -302,15 +358,16 @@ def warn_overdispersed_table(
     dispersion, pvalue, n_groups = res
     if not _flagged(res):
         return dispersion
+    head = (f"{owner}: the count table's {n_groups} groups (rows with identical features) "
+            f"are not binomial around a Platt map of the held-out probabilities (Pearson "
+            f"dispersion {dispersion:.3g}, p = {pvalue:.2g})")
     flex = table_dispersion(p, y, w, groups, flexible=True)
     if flex is not None and not _flagged(flex):
         warnings.warn(
-            f"{owner}: the count table's {n_groups} groups (rows with identical features) are "
-            f"not binomial around a Platt map of the held-out probabilities (Pearson "
-            f"dispersion {dispersion:.3g}, p = {pvalue:.2g}) but are around a flexible map of "
-            f"them (a natural cubic spline of their log-odds: dispersion {flex[0]:.3g}, p = "
-            f"{flex[1]:.2g}). That is lack of fit of the map's shape, not groups whose cases "
-            f"share causes: counting the cases one by one in {what} is right. "
+            f"{head} but are around a flexible map of them (a natural cubic spline of their "
+            f"log-odds: dispersion {flex[0]:.3g}, p = {flex[1]:.2g}). That is lack of fit of "
+            "the map's shape, not groups whose cases share causes: counting the cases one by "
+            f"one in {what} is right. "
             + (fit_remedy if fit_remedy is not None else
                "A map more flexible than Platt's (isotonic, binning or beta) or a better-fitting "
                "model is the remedy; the weights need no change (docs/aggregated_outcomes.md, "
@@ -319,22 +376,48 @@ def warn_overdispersed_table(
             stacklevel=stacklevel,
         )
         return dispersion
+    feat = None
+    if flex is not None and features is not None:
+        try:
+            feat = table_dispersion(p, y, w, groups, flexible=True, features=features)
+        except (TypeError, ValueError, IndexError):  # features not numbers or not aligned
+            feat = None
+    if feat is not None and not _flagged(feat):
+        warnings.warn(
+            f"{head}, nor around a flexible map of them (a natural cubic spline of their "
+            f"log-odds: dispersion {flex[0]:.3g}), but are once the table's own features "
+            f"enter beside it as linear terms (dispersion {feat[0]:.3g}, p = {feat[1]:.2g}). "
+            "That is lack of fit of the model: it misses what sets the groups apart, which "
+            "the features still tell; not groups whose cases share causes, so counting the "
+            f"cases one by one in {what} is right. A model that uses these features better "
+            "is the remedy; the weights need no change (docs/aggregated_outcomes.md, "
+            "\"Overdispersion or lack of fit (session 28)\").",
+            UserWarning,
+            stacklevel=stacklevel,
+        )
+        return dispersion
     if flex is not None:
-        scale = flex[0]
+        scale = flex[0] if feat is None else feat[0]
         measured = (f"Pearson dispersion {dispersion:.3g} around a Platt map of them, "
                     f"{flex[0]:.3g} around a flexible one, a natural cubic spline of their "
-                    f"log-odds; p = {flex[1]:.2g}")
+                    "log-odds" + ("" if feat is None else
+                                  f", {feat[0]:.3g} with the table's features added") +
+                    f"; p = {(flex if feat is None else feat)[1]:.2g}")
+        why = ("or the model misses what sets the groups apart in a way no linear term in "
+               "the table's features catches" if feat is not None else
+               "or the model misses what sets the groups apart (with one count per group the "
+               "two look alike)")
     else:
         scale = dispersion
         measured = (f"Pearson dispersion {dispersion:.3g}, p = {pvalue:.2g}; too few "
                     "distinct probabilities for a flexible map, so lack of fit of the map is "
                     "not ruled out")
+        why = "or the model misses what sets the groups apart"
     warnings.warn(
         f"{owner}: the count table's {n_groups} groups (rows with identical features) vary "
         f"more than binomial around the held-out probabilities, even around a flexible map of "
         f"them: overdispersion ({measured}). The cases of a group share causes (pupils of "
-        "one school, parcels of one route), or the model misses what sets the groups apart "
-        "(with one count per group the two look alike); either way every case counts as "
+        f"one school, parcels of one route), {why}; either way every case counts as "
         f"independent evidence in {what}, about {scale:.3g} times too much. "
         + (remedy if remedy is not None else
            "If the cases share causes, pass the weights divided by their sum, so that the "

