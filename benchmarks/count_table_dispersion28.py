@@ -5,14 +5,17 @@ groups "vary more than binomial" whenever Pearson's dispersion around a Platt ma
 held-out probabilities was above 2 (p < 0.001). It fired on 27 of 126 draws of sets whose cases
 were drawn one by one, where the cause is lack of fit, not cases that share causes. Since
 session 28 a flagged table is judged again around a flexible map (a natural cubic spline of the
-held-out log-odds, ``table_dispersion(..., flexible=True)``): still above the limit is
-overdispersion, binomial there is lack of fit of the map, and the warning says which.
+held-out log-odds, ``table_dispersion(..., flexible=True)``; binomial there: lack of fit of the
+map) and, if still flagged, with the table's numeric features beside it as linear terms
+(``features=``; binomial then: lack of fit of the model); otherwise overdispersion. The warning
+says which.
 
 The same draws as session 27 (frozen logistic regression, Gaussian naive Bayes, depth-3 tree
 fitted on 300 cases; 60, 300 or 1,000 other cases as a count table; two seeds; star98's
 districts), each passed to ``CalibrationWrapper(method="auto")``; the warning's words are
 counted. Known-truth tables, drawn on each draw's groups (their case counts and the model's
-probabilities ``p``, log-odds ``t`` clipped to +-8) with a seeded generator:
+probabilities ``p``, log-odds ``t`` clipped to +-8; their features for the second step)
+with a seeded generator:
 
 - ``binomial``: binomial around ``p`` (nothing to find);
 - ``lack of fit``: binomial around ``0.15 + 0.7 expit(2.5 t)``, a map a Platt map cannot
@@ -47,12 +50,13 @@ from count_table_dispersion27 import load_more, models  # noqa: E402
 from probwrap import CalibrationWrapper, _weights  # noqa: E402
 from probwrap._heldout import feature_cells  # noqa: E402
 
-OVER, FIT = "vary more than binomial", "lack of fit of the map"
+OVER, FIT, MODEL = "vary more than binomial", "lack of fit of the map", "lack of fit of the model"
 
 
 def said(caught) -> str:
     text = " ".join(str(c.message) for c in caught)
-    return "over" if OVER in text else "fit" if FIT in text else ""
+    return ("over" if OVER in text else "fit" if FIT in text else "model" if MODEL in text
+            else "")
 
 
 def wrapper_says(m, Xt, yt, wt) -> str:
@@ -63,23 +67,26 @@ def wrapper_says(m, Xt, yt, wt) -> str:
     return said(caught)
 
 
-def check_says(p, y, w, g) -> str:
+def check_says(p, y, w, g, features=None) -> str:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        _weights.warn_overdispersed_table(p, y, w, g, "Check", "its steps")
+        _weights.warn_overdispersed_table(p, y, w, g, "Check", "its steps", features=features)
     return said(caught)
 
 
-def groups_of(p, y, w, g):
-    """One probability and case count per group (frozen model: one score per group)."""
+def groups_of(p, y, w, g, X):
+    """One probability, case count and feature row per group (frozen model: one score per
+    group)."""
     s, _, ww, gg, n_groups = _weights._table_arrays(p, y, w, g)
     n = np.bincount(gg, weights=ww, minlength=n_groups)
     pg = np.zeros(n_groups)
     pg[gg] = expit(s)
-    return pg, np.round(n).astype(int)
+    Xg = np.zeros((n_groups, X.shape[1]))
+    Xg[gg] = np.asarray(X, dtype=float)[np.asarray(w) > 0]
+    return pg, np.round(n).astype(int), Xg
 
 
-def redraw(pg, n, rate, rng, rho=None):
+def redraw(pg, n, Xg, rate, rng, rho=None):
     if rho is not None:
         a, b = rate * (1 - rho) / rho, (1 - rate) * (1 - rho) / rho
         rate = rng.beta(np.maximum(a, 1e-3), np.maximum(b, 1e-3))
@@ -89,7 +96,8 @@ def redraw(pg, n, rate, rng, rho=None):
     y = np.concatenate([np.ones(G), np.zeros(G)])
     g = np.concatenate([np.arange(G)] * 2)
     keep = w > 0
-    return np.concatenate([pg, pg])[keep], y[keep], w[keep], g[keep]
+    return (np.concatenate([pg, pg])[keep], y[keep], w[keep], g[keep],
+            np.concatenate([Xg, Xg])[keep])
 
 
 def _pearson(q, y, w, g, n_params):
@@ -137,28 +145,29 @@ def candidates(p, y, w, g):
 KINDS = ("binomial", "lack of fit", "beta-binomial", "both")
 
 
-def known_truth(pg, n, rng):
+def known_truth(pg, n, Xg, rng):
     t = np.clip(np.log(np.clip(pg, 1e-12, 1)) - np.log1p(-np.clip(pg, 0, 1 - 1e-12)), -8, 8)
     bent = 0.15 + 0.7 * expit(2.5 * t)
-    return {"binomial": redraw(pg, n, expit(t), rng),
-            "lack of fit": redraw(pg, n, bent, rng),
-            "beta-binomial": redraw(pg, n, expit(t), rng, rho=0.05),
-            "both": redraw(pg, n, bent, rng, rho=0.05)}
+    return {"binomial": redraw(pg, n, Xg, expit(t), rng),
+            "lack of fit": redraw(pg, n, Xg, bent, rng),
+            "beta-binomial": redraw(pg, n, Xg, expit(t), rng, rho=0.05),
+            "both": redraw(pg, n, Xg, bent, rng, rho=0.05)}
 
 
 class Tally:
     def __init__(self):
-        self.n, self.platt, self.over, self.fit = 0, 0, 0, 0
+        self.n, self.platt, self.over, self.fit, self.model = 0, 0, 0, 0, 0
         self.cand: dict[str, int] = {}
 
-    def add(self, p, y, w, g, says=None, want_candidates=False):
+    def add(self, p, y, w, g, features=None, says=None, want_candidates=False):
         res = _weights.table_dispersion(p, y, w, g)
         flagged = _weights._flagged(res)
-        says = check_says(p, y, w, g) if says is None else says
+        says = check_says(p, y, w, g, features) if says is None else says
         self.n += 1
         self.platt += flagged
         self.over += says == "over"
         self.fit += says == "fit"
+        self.model += says == "model"
         if want_candidates and flagged:
             for k, v in candidates(p, y, w, g).items():
                 self.cand[k] = self.cand.get(k, 0) + v
@@ -167,7 +176,7 @@ class Tally:
     def line(self, label):
         cand = "".join(f", {k} {v}" for k, v in self.cand.items())
         return (f"{label}: {self.n} draws, Platt map flags {self.platt}; says overdispersion "
-                f"{self.over}, lack of fit {self.fit}" + (f" | still flagged around{cand}"
+                f"{self.over}, lack of fit of the map {self.fit}, of the model {self.model}" + (f" | still flagged around{cand}"
                                                           if cand else ""))
 
 
@@ -198,21 +207,24 @@ def main() -> None:
                         continue
                     for t in (here, real):
                         t.add(p, yt, wt, g, says=says, want_candidates=want and t is real)
-                    if says == "over":
+                    if says in ("over", "model"):
                         d = _weights.table_dispersion(p, yt, wt, g)
                         f = _weights.table_dispersion(p, yt, wt, g, flexible=True)
-                        still.append(f"{name} n_cal={n_cal} seed={seed} {mname}: Platt "
-                                     f"{d[0]:.3g}, flexible {f[0]:.3g} ({f[2]} groups)")
-                    pg, n = groups_of(p, yt, wt, g)
+                        h = _weights.table_dispersion(p, yt, wt, g, flexible=True, features=Xt)
+                        still.append(f"{name} n_cal={n_cal} seed={seed} {mname} says {says}: "
+                                     f"Platt {d[0]:.3g}, flexible {f[0]:.3g}, with features "
+                                     f"{'not judged' if h is None else format(h[0], '.3g')} "
+                                     f"({f[2]} groups)")
+                    pg, n, Xg = groups_of(p, yt, wt, g, Xt)
                     if pg.shape[0] < 10:
                         continue
-                    for kind, drawn in known_truth(pg, n, rng).items():
+                    for kind, drawn in known_truth(pg, n, Xg, rng).items():
                         truth[kind].add(*drawn, want_candidates=want)
         print(here.line(name), flush=True)
     print(real.line("all eight sets (cases drawn one by one)"))
     for kind in KINDS:
         print(truth[kind].line(f"known truth, {kind}"))
-    print("still said overdispersion on the eight sets:")
+    print("flexible map still flagged on the eight sets:")
     for s in still:
         print("  " + s)
     s = sm.datasets.star98.load_pandas()
