@@ -59,7 +59,7 @@ Run: nice python benchmarks/shift_rehearsal28.py --quick   (digits and penguins 
      nice python benchmarks/shift_rehearsal28.py [--seed-start 0] [--seeds 1] [--sets NAME ...]
                                                  [--models lr nb rf] [--sizes 150 400]
      nice python benchmarks/shift_rehearsal28.py --summary FILE.csv
-Results: docs/prior_shift.md, "A rehearsal on the labelled rows, measured and not kept (session 28)".
+Results: docs/evidence/prior_shift_log.md, "A rehearsal on the labelled rows, measured and not kept (session 28)".
 """
 
 from __future__ import annotations

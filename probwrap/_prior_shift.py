@@ -640,7 +640,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             rows. None: every row is its own unit (cells are never found on their own here,
             though the folds keep such rows together); a two-class count table then read as
             its cases (a frozen model) whose groups vary more than binomial draws a
-            ``UserWarning`` (docs/prior_shift.md, "Count tables in adapt (session 27)"),
+            ``UserWarning`` (docs/evidence/prior_shift_log.md, "Count tables in adapt (session 27)"),
             which since session 28 says lack of fit of the map (or of the model) instead
             when a flexible map of the probabilities (or the table's own features beside it)
             fits the groups binomially.
