@@ -453,6 +453,7 @@ def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.
     k = src.shape[0]
     level_all = all_shares_level(est.confidence_level, k)
     if moments is not None and target is not None:
+        est._warn_moment_rank(moments)  # as in memory
         found = moment_prior_interval(target, moments, est.confidence_level)
         bounds = np.column_stack([np.zeros(k), np.ones(k)]) if found is None else found[0]
         found = moment_prior_interval(target, moments, level_all)

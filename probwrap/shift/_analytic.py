@@ -320,15 +320,33 @@ def moment_prior_interval(
     ``target``: ``(mean, per-row covariance, effective rows)`` of the unlabelled rows' scores
     (as the shift test computes them); ``class_moments``: :func:`class_score_moments`.
     Returns ``(interval (k, 2), centre (k,), covariance (k, k), degrees of freedom (k,))``, or
-    None where the class means do not identify the shares (``B`` singular).
+    None where the class means identify no direction of the shares (``B`` zero, or no share
+    vector consistent with them).
+
+    Where ``B`` has rank ``r`` below ``k - 1`` (:func:`moment_identified_rank`: a model whose
+    calibrated posteriors take only ``r + 1`` distinct values, for instance, moves the mean
+    score along ``r`` directions only), the shares are identified only along those ``r``
+    directions and each share's interval is its whole range over the simplex's points
+    consistent with them (:func:`_partial_moment_interval`); the covariance and degrees of
+    freedom are then NaN. Before session 28 such a ``B`` went to the inverse regardless, and
+    its rounding-level singular values decided the interval: on R's ``HairEyeColor``
+    (a frozen gradient-boosting model with two distinct posterior rows) the ends flipped
+    between [0, 1] and [0.135, 0.909] when the weights changed in the last bit.
     """
     m_t, c_t, n_t = target
     means, covs, n_c = class_moments
     k = means.shape[0]
     b = (means[1:] - means[:1]).T  # column c - 1: how the mean score moves with share c
+    if not np.all(np.isfinite(b)):
+        return None
+    rank = moment_identified_rank(means)
+    if rank == 0:
+        return None
+    if rank < k - 1:
+        return _partial_moment_interval(target, class_moments, confidence_level, rank)
     try:
         b_inv = np.linalg.inv(b)
-    except np.linalg.LinAlgError:
+    except np.linalg.LinAlgError:  # pragma: no cover (rank k - 1 above)
         return None
     if not np.all(np.isfinite(b_inv)):
         return None
@@ -348,6 +366,135 @@ def moment_prior_interval(
     cov = sum(parts)
     df = satterthwaite_df([np.diag(v) for v in parts], dofs)
     return share_interval(centre, cov, confidence_level, df=df), centre, cov, df
+
+
+#: Singular values of the class-mean matrix ``B`` of :func:`moment_prior_interval` at or below
+#: this share of the largest are read as rounding: the shares are not identified along them.
+#: A direction of real data at 1e-9 of the largest would need the class means to differ by a
+#: billionth of their spread to move the mean score; its interval would be [0, 1] anyway.
+MOMENT_RANK_TOL = 1e-9
+
+
+def moment_identified_rank(means: np.ndarray) -> int:
+    """Number of directions of the ``k - 1`` free class shares that the labelled classes' mean
+    scores ``means`` (k, k-1) identify: the rank of ``B = (means[1:] - means[0]).T``, its
+    singular values counted above ``MOMENT_RANK_TOL`` times the largest (NumPy's
+    ``matrix_rank`` with that relative tolerance). ``k - 1``: every share is identified.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from probwrap.shift._analytic import moment_identified_rank
+    >>> # two distinct posterior rows: every class mean lies on the line through their scores
+    >>> u = np.array([[1.0, -0.5, 2.0], [0.2, 0.1, -0.3]])
+    >>> mix = np.array([[0.9, 0.1], [0.6, 0.4], [0.3, 0.7], [0.2, 0.8]])
+    >>> moment_identified_rank(mix @ u)
+    1
+    """
+    means = np.asarray(means, dtype=float)
+    b = (means[1:] - means[:1]).T
+    if b.size == 0 or not np.all(np.isfinite(b)):
+        return 0
+    sv = np.linalg.svd(b, compute_uv=False)
+    if not sv[0] > 0.0:
+        return 0
+    return int(np.sum(sv > MOMENT_RANK_TOL * sv[0]))
+
+
+def _share_ranges(v: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> tuple | None:
+    """Smallest and largest value of each of the ``k`` class shares over the simplex's points
+    whose free shares ``f`` (share 0 is one minus their sum) have ``lo <= v.T @ f <= hi``, by
+    linear programming (SciPy's ``linprog``, HiGHS); ``(ranges (k, 2), the mean of the 2k
+    optimal points)``, or None where no point qualifies."""
+    from scipy.optimize import linprog
+
+    km1 = v.shape[0]
+    a_ub = np.vstack([v.T, -v.T, np.ones((1, km1))])
+    b_ub = np.concatenate([hi, -lo, [1.0]])
+    out = np.empty((km1 + 1, 2))
+    points = []
+    for c in range(km1 + 1):
+        # share 0 = 1 - sum f: its smallest value is where sum f is largest
+        obj = -np.ones(km1) if c == 0 else np.eye(km1)[c - 1]
+        for end, sign in ((0, 1.0), (1, -1.0)):
+            res = linprog(sign * obj, A_ub=a_ub, b_ub=b_ub, bounds=[(0.0, 1.0)] * km1,
+                          method="highs")
+            if res.status != 0:
+                return None
+            f = np.clip(res.x, 0.0, 1.0)
+            points.append(f)
+            val = 1.0 - f.sum() if c == 0 else f[c - 1]
+            out[c, end] = val
+    out = np.clip(out, 0.0, 1.0)
+    f = np.mean(points, axis=0)
+    return out, np.concatenate([[max(1.0 - f.sum(), 0.0)], f])
+
+
+def _partial_moment_interval(target: tuple, class_moments: tuple, confidence_level: float,
+                             rank: int) -> tuple | None:
+    r""":func:`moment_prior_interval` where ``B`` has rank ``r < k - 1``: the shares are
+    identified along ``r`` directions only, and every other direction gets its whole range.
+
+    With ``B``'s singular value decomposition cut to its ``r`` leading terms, ``B ~ U S V^T``,
+    the equations :math:`B f = ar u_t - ar u_0` of the free shares ``f`` give the ``r``
+    combinations :math:`g = V^	op f = S^{-1} U^	op (ar u_t - ar u_0)` and nothing along
+    the other directions (the equations' component outside ``U`` is sampling error). Each
+    combination gets the t interval of the same delta method (the unlabelled rows' and each
+    class's labelled rows' error, Satterthwaite's degrees of freedom), at the per-combination
+    level ``1 - (1 - level) / r`` (Bonferroni, so that all ``r`` hold at once); the class parts
+    are weighted by each share's largest value over the region (a first pass with weight 1,
+    then the region's upper ends: an upper bound on the plug-in of the full-rank case). Each
+    share's interval is its smallest and largest value over the simplex's points whose
+    combinations lie in those intervals (linear programming, :func:`_share_ranges`), so it
+    covers the share whenever the ``r`` intervals cover theirs; where they meet no point of
+    the simplex they are widened together, by the least multiple of their half-widths that
+    reaches one (as the full-rank centre is moved into the simplex). The centre is the mean of
+    the optimal points (a point of the region), the covariance and degrees of freedom NaN.
+    """
+    from scipy.optimize import linprog
+
+    m_t, c_t, n_t = target
+    means, covs, n_c = class_moments
+    means = np.asarray(means, dtype=float)
+    k = means.shape[0]
+    b = (means[1:] - means[:1]).T
+    u, s, vt = np.linalg.svd(b)
+    ur, sr, v = u[:, :rank], s[:rank], vt[:rank].T  # v: (k-1, r)
+    proj = (ur / sr).T  # (r, k-1): g = proj @ (m_t - means[0])
+    g = proj @ (np.asarray(m_t, dtype=float) - means[0])
+    n_t = max(float(n_t), 1.0)
+    level = 1.0 - (1.0 - float(confidence_level)) / rank
+    weight = np.ones(k)
+    found = None
+    for _ in range(2):
+        parts = [np.diag(proj @ (np.asarray(c_t, dtype=float) / max(n_t - 1.0, 1.0)) @ proj.T)]
+        dofs = [max(n_t - 1.0, 1.0)]
+        for y in range(k):
+            dof = max(float(n_c[y]) - 1.0, 1.0)
+            parts.append(np.diag(proj @ (weight[y] ** 2 * covs[y] / dof) @ proj.T))
+            dofs.append(dof)
+        se = np.sqrt(np.maximum(sum(parts), 0.0))
+        df = satterthwaite_df(parts, dofs)
+        q = np.full(rank, float(norm.ppf(0.5 + level / 2.0)))
+        small = np.isfinite(df) & (df < 1e7)
+        q[small] = student_t.ppf(0.5 + level / 2.0, np.maximum(df[small], 1.0))
+        half = q * se
+        # the least widening (a multiple tau of the half-widths) that meets the simplex
+        a_ub = np.vstack([np.column_stack([v.T, -half]), np.column_stack([-v.T, -half]),
+                          np.append(np.ones(v.shape[0]), 0.0)[None]])
+        b_ub = np.concatenate([g + half, half - g, [1.0]])
+        res = linprog(np.append(np.zeros(v.shape[0]), 1.0), A_ub=a_ub, b_ub=b_ub,
+                      bounds=[(0.0, 1.0)] * v.shape[0] + [(0.0, None)], method="highs")
+        if res.status != 0:
+            return None
+        tau = max(float(res.x[-1]), 0.0)
+        stretch = max(1.0, tau) * (1.0 + 1e-9) + 1e-12
+        found = _share_ranges(v, g - stretch * half, g + stretch * half)
+        if found is None:
+            return None
+        weight = found[0][:, 1]
+    ranges, centre = found
+    return ranges, centre, np.full((k, k), np.nan), np.full(k, np.nan)
 
 
 def all_shares_level(confidence_level: float, k: int) -> float:

@@ -135,7 +135,12 @@ class PriorNotIdentifiedWarning(UserWarning):
     Raised when the confusion matrix of ACC / PACC / BBSE is ill-conditioned (the classes'
     predictions are nearly the same, for two classes the true- and false-positive rates are
     within sampling error of each other): the estimator then returns the source prior with an
-    interval spanning [0, 1] instead of a confident-looking number.
+    interval spanning [0, 1] instead of a confident-looking number. With more than two
+    classes (since session 28) also where the labelled classes' mean scores move along fewer
+    than ``k - 1`` directions of the class shares (a model with only a few distinct posterior
+    rows): the message names how many, and each share's interval is its whole range over the
+    shares consistent with the identified directions
+    (``probwrap.shift._analytic.moment_prior_interval``).
     """
 
 

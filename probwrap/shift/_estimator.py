@@ -30,6 +30,7 @@ from ._analytic import (
     class_score_moments,
     class_score_sums,
     labelled_parameter_cov,
+    moment_identified_rank,
     moment_prior_interval,
 )
 from ._calibration import BiasCorrectedScaling, choose_tail, tail_log_scores
@@ -40,6 +41,7 @@ from ._estimate import (
     FewLabelledRowsWarning,
     PriorEstimate,
     PriorIntervalConflictWarning,
+    PriorNotIdentifiedWarning,
     _loglik,
     _solve_prior,
     _warn_empty_columns,
@@ -916,6 +918,7 @@ class PriorEstimator(_Resampling):
                     w_fold = fold_shares(refit[1], source[1], source[2], refit[0].shape[0])[1]
                     moments = class_score_moments(class_score_sums(
                         self.calibrate(source[0]), source[1], w_fold, src))
+                self._warn_moment_rank(moments)
                 found = moment_prior_interval((m_t, c_t, n_test), moments,
                                               self.confidence_level)
                 bounds = (np.column_stack([np.zeros(k), np.ones(k)]) if found is None
@@ -1265,6 +1268,33 @@ class PriorEstimator(_Resampling):
             stacklevel=3,
         )
         return widened, ml_bounds
+
+    def _warn_moment_rank(self, moments: tuple | None) -> bool:
+        """Warn (:class:`PriorNotIdentifiedWarning`, with the reason) where the labelled
+        classes' mean scores identify fewer than ``k - 1`` directions of the class shares
+        (:func:`~probwrap.shift._analytic.moment_identified_rank`); the interval is then each
+        share's whole range over the shares consistent with the identified directions. Returns
+        whether it warned."""
+        if moments is None:
+            return False
+        means = np.asarray(moments[0], dtype=float)
+        k = means.shape[0]
+        rank = moment_identified_rank(means)
+        if rank >= k - 1:
+            return False
+        warnings.warn(
+            f"The class priors are not identified: the labelled rows' {k} classes have mean "
+            f"scores that move along {rank} of the {k - 1} directions of the class shares "
+            "(the calibrated posteriors vary along too few directions between the classes; a "
+            f"model whose posteriors take only {rank + 1} distinct values, for instance). "
+            "Along the other directions no share is told apart from another, so each share's "
+            "interval is its whole range over the shares consistent with the identified "
+            + ("direction" if rank == 1 else "directions")
+            + ", and the estimate along them is EM's starting point, not evidence.",
+            PriorNotIdentifiedWarning,
+            stacklevel=3,
+        )
+        return True
 
     def _warn_few_labelled(self, n_src: float | None, *, design: bool = False) -> None:
         """Warn when the interval rests on fewer than ``FEW_LABELLED_ROWS`` effective labelled
