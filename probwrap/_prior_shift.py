@@ -28,8 +28,10 @@ from ._heldout import (
 from ._prior_shift_features import (
     check_feature_check_rows,
     keep_feature_rows,
+    monitor_feature_checks,
     refuse_distributed,
     run_feature_check,
+    skip_distributed_monitor,
 )
 from ._prior_shift_tallied import _tally_rows, tallied_adapt, tallied_monitor
 from ._validation import check_sample_weight, plain
@@ -329,8 +331,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         the columns that differ most. ``fit`` refuses it for features that are not numeric and
         finite (a sparse matrix, text or category columns, missing values) and for Dask or
         Spark rows; ``adapt`` refuses Dask or Spark rows while it is set, and does not run
-        the check with ``cells`` (it counts rows as independent), saying so. Measured in
-        docs/evidence/prior_shift_log.md, "Feature check from adapt (session 27)".
+        the check with ``cells`` (it counts rows as independent), saying so. ``monitor`` runs
+        it on every batch of rows in memory (session 28; fields ``feature_pvalue`` and
+        ``feature_check`` of its table, one warning naming the batches), not on Dask or
+        Spark rows (said in a UserWarning). Measured in docs/evidence/prior_shift_log.md, "Feature check
+        from adapt (session 27)" and "Feature check in monitor (session 28)".
 
     Attributes
     ----------
@@ -1699,6 +1704,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             Once per call, naming the batches whose rows repeat one another far beyond chance,
             each judged as ``adapt`` judges its rows (no ``cells`` given; in memory, on Dask
             blocks and Spark batches alike; since 5 December 2026).
+        FeatureMixtureMisfitWarning
+            With ``feature_check_rows`` set (rows in memory, no ``cells``; since session 28):
+            once per call, naming the batches whose features do not fit the labelled classes
+            mixed at the batch's maximum-likelihood shares (combined p-value below 1 %, each
+            batch checked as ``adapt`` checks its rows), with the first one's columns. The
+            table then has two more fields: ``feature_pvalue`` (each batch's combined p-value;
+            NaN where the check could not run, e.g. a batch of one row) and ``feature_check``
+            (its :class:`~probwrap.shift.FeatureMixtureMisfit`). Not run on Dask or Spark rows
+            (a UserWarning says so; the table has no such fields) nor with ``cells``.
         """
         check_fitted(self, "prior_estimator_")
         self._check_features(X, "passed to monitor")
@@ -1715,6 +1729,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
             table = monitor_dask(self, X, batches, batch_size, sample_weight)
             self._warn_imprecise_batches(table)
+            skip_distributed_monitor(self)  # (the feature check: rows in memory only)
             return table
         proba = self._inner_output(X, "predict_proba")
         if sample_weight is not None:
@@ -1740,7 +1755,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # a Poisson bootstrap over the tally's replicates and the batch's rows.
             table = tallied_monitor(est, source, proba, batches, batch_size, sample_weight)
         self._warn_imprecise_batches(table)
-        return table
+        # the opt-in feature check, batch by batch (feature_check_rows; since session 28)
+        return monitor_feature_checks(self, X, table, batches, batch_size, sample_weight,
+                                      cells)
 
     def _warn_batch_repeats(self, table: np.ndarray, proba: np.ndarray, batches: Any,
                             batch_size: Any, sample_weight: Any, folds: Any,

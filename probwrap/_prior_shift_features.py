@@ -179,3 +179,117 @@ def run_feature_check(wrapper: Any, X: Any, sample_weight: Any, cells: Any) -> N
     if result.combined_pvalue < FEATURE_MISFIT_LEVEL:
         warnings.warn(misfit_message("PriorShiftWrapper.adapt", result),
                       FeatureMixtureMisfitWarning, stacklevel=3)
+
+
+def _batch_labels(n: int, batches: Any, batch_size: Any) -> np.ndarray:
+    """Each row's batch as :func:`probwrap.shift.prior_by_batch` reads it."""
+    if batch_size is not None:
+        return np.arange(n) // int(batch_size)
+    labels = np.asarray(batches)
+    return labels.astype(str) if labels.dtype == object else labels
+
+
+def with_feature_fields(table: np.ndarray, pvalues: np.ndarray, results: list) -> np.ndarray:
+    """``table`` with two more fields: ``feature_pvalue`` (each batch's combined p-value, NaN
+    where the check did not run) and ``feature_check`` (its
+    :class:`~probwrap.shift.FeatureMixtureMisfit`, or None)."""
+    out = np.zeros(table.shape[0], dtype=table.dtype.descr + [("feature_pvalue", float),
+                                                             ("feature_check", object)])
+    for name in table.dtype.names:
+        out[name] = table[name]
+    out["feature_pvalue"] = pvalues
+    for i, res in enumerate(results):
+        out["feature_check"][i] = res
+    return out
+
+
+def monitor_feature_checks(wrapper: Any, X: Any, table: np.ndarray, batches: Any,
+                           batch_size: Any, sample_weight: Any, cells: Any) -> np.ndarray:
+    """``monitor`` with the feature check on (``feature_check_rows``; session 28): each batch's
+    rows against the kept labelled rows re-weighted to the batch's maximum-likelihood shares
+    (``ml_prior``), as ``adapt`` checks its rows (at most ``feature_check_rows`` of them, drawn
+    with ``adapt``'s seed, so a batch gets ``adapt``'s result on the same rows). Returns the
+    table with ``feature_pvalue`` and ``feature_check`` (:func:`with_feature_fields`); warns
+    once with :class:`~probwrap.shift.FeatureMixtureMisfitWarning`, naming the batches whose
+    combined p-value is below 1 % and giving the first one's columns. The table is returned
+    unchanged where the check is off."""
+    kept = getattr(wrapper, "_feature_sample", None)
+    if kept is None or table.shape[0] == 0:
+        return table
+    n_b = table.shape[0]
+    none = np.full(n_b, np.nan), [None] * n_b
+    if cells is not None:
+        warnings.warn(
+            "PriorShiftWrapper.monitor: the feature check (feature_check_rows) counts every "
+            "row as independent, so it is not run with `cells`; the table's feature_pvalue is "
+            "NaN. Run probwrap.shift.feature_mixture_misfit on one row per cell yourself.",
+            UserWarning, stacklevel=3)
+        return with_feature_fields(table, *none)
+    X_l, y_l, w_l, names = kept
+    try:
+        A, _ = _numeric_rows(X, "X passed to monitor", names)
+        if A.shape[1] != X_l.shape[1]:
+            raise ValueError(f"X passed to monitor has {A.shape[1]} columns, the kept labelled "
+                             f"rows {X_l.shape[1]}.")
+    except ValueError as err:
+        warnings.warn(
+            f"PriorShiftWrapper.monitor: the feature check (feature_check_rows) could not run "
+            f"on these rows ({err}); the table's feature_pvalue is NaN.", UserWarning,
+            stacklevel=3)
+        return with_feature_fields(table, *none)
+    labels = _batch_labels(A.shape[0], batches, batch_size)
+    w = None if sample_weight is None else np.asarray(sample_weight, float)
+    cap = int(wrapper.feature_check_rows)
+    seed = _seed(wrapper.random_state)
+    pvalues, results = none[0].copy(), list(none[1])
+    flagged, skipped = [], []
+    for i, b in enumerate(table["batch"]):
+        rows = np.flatnonzero(labels == b)
+        Ab, wb = A[rows], None if w is None else w[rows]
+        if Ab.shape[0] > cap:  # as adapt draws from its rows
+            pick = np.sort(np.random.default_rng(seed + 1).choice(Ab.shape[0], cap,
+                                                                  replace=False))
+            Ab, wb = Ab[pick], None if wb is None else wb[pick]
+        prior = np.asarray(table["ml_prior"][i], float)
+        if not np.all(np.isfinite(prior)):
+            prior = np.asarray(table["prior"][i], float)
+        try:
+            res = feature_mixture_misfit(
+                X_l, y_l, Ab, prior=prior, sample_weight=wb, labelled_sample_weight=w_l,
+                level=None, random_state=seed, feature_names=names)
+        except ValueError as err:
+            skipped.append((b, str(err)))
+            continue
+        results[i], pvalues[i] = res, res.combined_pvalue
+        if res.combined_pvalue < FEATURE_MISFIT_LEVEL:
+            flagged.append((b, res))
+    if skipped:
+        which = ", ".join(str(plain(b)) for b, _ in skipped[:5]) + (
+            ", ..." if len(skipped) > 5 else "")
+        warnings.warn(
+            f"PriorShiftWrapper.monitor: the feature check (feature_check_rows) could not run "
+            f"on {len(skipped)} of {n_b} batches (batch {which}; first: {skipped[0][1]}); their "
+            "feature_pvalue is NaN.", UserWarning, stacklevel=3)
+    if flagged:
+        which = ", ".join(str(plain(b)) for b, _ in flagged[:8]) + (
+            ", ..." if len(flagged) > 8 else "")
+        b0, res0 = flagged[0]
+        warnings.warn(misfit_message(
+            f"PriorShiftWrapper.monitor: in {len(flagged)} of {n_b} batches (batch {which}) "
+            f"the features do not fit the class mixture at {FEATURE_MISFIT_LEVEL:.0%} (each "
+            "batch tested on its own: about one ordinary batch in a hundred is named by "
+            f"chance); first, batch {plain(b0)}", res0), FeatureMixtureMisfitWarning,
+            stacklevel=3)
+    return with_feature_fields(table, pvalues, results)
+
+
+def skip_distributed_monitor(wrapper: Any) -> None:
+    """``monitor`` on Dask or Spark rows with the feature check on: said, not run (the check
+    compares rows in memory; a batch's rows stay where they live)."""
+    if getattr(wrapper, "_feature_sample", None) is None:
+        return
+    warnings.warn(
+        "PriorShiftWrapper.monitor: the feature check (feature_check_rows) runs on rows in "
+        "memory only and is not run on Dask or Spark rows; the table has no feature_pvalue. "
+        "Collect a batch's rows and call monitor (or adapt) on them for it.",
+        UserWarning, stacklevel=3)
