@@ -177,3 +177,36 @@ def test_hair_eye_color_interval_does_not_follow_the_weights_last_bit():
             assert pv == pytest.approx(out[0][2], abs=1e-9)
         checked += 1
     assert checked == 3
+
+
+def test_dask_rows_give_the_same_partial_interval_and_warning(client):
+    # the same rule where the rows stay on the workers (multiclass Dask adapt): a frozen
+    # logistic regression on one 0/1 feature (class 0 always 0, class 1 always 1, class 2
+    # either) gives two posterior rows; the interval and warning equal the in-memory ones
+    da = pytest.importorskip("dask.array")
+    from sklearn.linear_model import LogisticRegression
+
+    rng = np.random.default_rng(0)
+
+    def draw(n, prior):
+        y = rng.choice(3, size=n, p=prior)
+        x = np.where(y == 0, 0, np.where(y == 1, 1, rng.integers(0, 2, size=n)))
+        return x[:, None].astype(float), y
+
+    model = LogisticRegression().fit(*draw(300, SOURCE))
+    X_s, y_s = draw(400, SOURCE)
+    X_t, _ = draw(3000, np.array([0.2, 0.2, 0.6]))
+    wrapper = PriorShiftWrapper(FrozenEstimator(model), random_state=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        wrapper.fit(X_s, y_s)
+    got = []
+    for X in (X_t, da.from_array(X_t, chunks=1000)):
+        with warnings.catch_warnings(record=True) as ws:
+            warnings.simplefilter("always")
+            wrapper.adapt(X)
+        assert any("move along 1 of the 2 directions" in str(w.message) for w in ws
+                   if issubclass(w.category, PriorNotIdentifiedWarning))
+        got.append(np.asarray(wrapper.target_prior_interval_, float))
+    np.testing.assert_allclose(got[1], got[0], atol=1e-9)
+    assert got[0][2, 1] == pytest.approx(1.0) and got[0][0, 1] < 0.7 and got[0][1, 1] < 0.7
