@@ -90,6 +90,24 @@ def test_partial_interval_is_the_slab_of_the_identified_share_on_the_simplex():
     assert centre.sum() == pytest.approx(1.0) and np.all(centre >= 0)
 
 
+def test_a_batch_beyond_every_class_mixture_is_read_at_the_nearest_share():
+    # Labelled: class 0 all row A, class 1 row B 60 % of the time, class 2 30 %; a batch of
+    # B rows only (s = 1, beyond every class's mixture: no share vector gives it). As the
+    # full-rank centre is moved into the simplex, the slab is widened to the nearest share
+    # vector, all of class 1 (its mixture is the largest), and the interval is that point.
+    y_s = np.repeat([0, 1, 2], 400)
+    b_s = np.zeros(y_s.size, int)
+    b_s[y_s == 1] = np.arange(400) < 240  # exactly 60 % and 30 %
+    b_s[y_s == 2] = np.arange(400) < 120
+    rows = np.vstack([ROW_A, ROW_B])
+    src = np.full(3, 1 / 3)
+    moments = class_score_moments(class_score_sums(rows[b_s], y_s, np.ones(y_s.size), src))
+    tgt = _mean_cov(_score_rows(rows[np.ones(500, int)], src), np.ones(500))
+    interval, centre, _, _ = moment_prior_interval(tgt, moments, 0.95)
+    np.testing.assert_allclose(interval, [[0, 0], [1, 1], [0, 0]], atol=1e-4)
+    np.testing.assert_allclose(centre, [0, 1, 0], atol=1e-4)
+
+
 def test_not_identified_estimate_warns_with_the_reason_and_keeps_the_whole_range():
     target = np.array([0.2, 0.2, 0.6])
     p_s, y_s, p_t, _, _ = _two_row_draw(400, 600, target, 2)
