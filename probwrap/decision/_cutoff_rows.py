@@ -150,7 +150,7 @@ class _DecisionEnds:
     def __getitem__(self, idx: Any) -> np.ndarray:
         k = np.asarray(idx) - (0 if self.upper else 1)
         m = self.u.shape[0]
-        out = self.u[np.clip(k, 0, m - 1)]
+        out = self.u[np.minimum(np.maximum(k, 0), m - 1)]  # (np.clip of integers, fewer checks)
         return np.where(k < 0, self.lo_ext, np.where(k >= m, self.hi_ext, out))
 
     def count_at_most(self, value: float) -> int:
@@ -205,7 +205,7 @@ def _neighbour_middles_in_place(buf: np.ndarray, m: int, lo_ext: float, hi_ext: 
     if m > 1:
         with np.errstate(over="ignore"):
             wide = not np.isfinite(u[m - 1] - u[0])  # a gap overflows only if the range does
-        size = max(1, min(_MIDDLE_BLOCK, max(2048, m // 32), m - 1))  # see _cutoff._block_rows
+        size = max(1, min(_MIDDLE_BLOCK, max(1 << 14, m // 32), m - 1))  # see _cutoff._block_rows
         tmp = np.empty(size)
         b = m
         while b > 1:
