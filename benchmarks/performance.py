@@ -30,9 +30,11 @@ from sklearn.isotonic import IsotonicRegression
 from sklearn.linear_model import LogisticRegression
 
 from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
+from probwrap._cost_policy_summary import CURVE_POINTS
 from probwrap._heldout import PREDICT_CHUNK_ROWS
 from probwrap.calibration import IsotonicMap, VennAbersMap
 from probwrap.decision import search_cutoff
+from probwrap.decision._cutoff import _search_cutoff
 
 ROWS: list[tuple[str, str, float, str, bool, str]] = []
 
@@ -277,14 +279,28 @@ def cutoff(n: int) -> None:
                 # the search's first step alone: one sort of integer keys that carry the class
                 return _packed_order(s, y)
 
-            t_search, t_sort, t_order = cpu_medians(search, lambda s=s: np.sort(s), ordering,
-                                                    repeat=7)
+            y8, unit = y.astype(np.int8), np.broadcast_to(np.float64(1.0), n)
+            matrix = np.array([[0.0, 1.0], [6.0, 0.0]])
+
+            def tuned_search(s=s, y8=y8, unit=unit, matrix=matrix):
+                # the call inside CostPolicyWrapper(strategy="tuned").fit beyond 20,000 rows:
+                # one-byte labels, unit weights as one repeated value, the curve kept thinned
+                return _search_cutoff(s, y8, matrix, unit, None, (0.0, 1.0),
+                                      max_points=CURVE_POINTS)
+
+            t_search, t_sort, t_order, t_tuned = cpu_medians(
+                search, lambda s=s: np.sort(s), ordering, tuned_search, repeat=7)
             ratio = t_search / t_sort
             record("7", f"search_cutoff / np.sort, {n:.0e} rows, {kind}, prevalence "
                    f"{prevalence}", ratio, "<= 3", ratio <= 3,
                    f"ordering the rows with their classes (one sort of packed keys) takes "
                    f"{t_order / t_sort:.2g} sorts; the cumulative sum and the curve returned at "
                    "full resolution (costs, middles, shares) the rest")
+            ratio = t_tuned / t_sort
+            record("7", f"the tuned CostPolicyWrapper's search (curve kept at {CURVE_POINTS} "
+                   f"points) / np.sort, {n:.0e} rows, {kind}, prevalence {prevalence}",
+                   ratio, "<= 3", ratio <= 3,
+                   "the ordering as above, the cumulative cost and the optimum; no full curve")
             if kind == "margins":
                 continue
             mem = peak_memory(search) / s.nbytes
