@@ -13,6 +13,7 @@ __all__ = ["packed_order"]
 
 _MAGNITUDE = np.int64(0x7FFF_FFFF_FFFF_FFFF)
 _HALF_RANGE = np.int64(511 << 52)  # bit pattern of 2.0**-512: scaled scores stay below it
+_DECODE_BLOCK = 1 << 14  # entries per block when the sorted keys are turned back into scores
 
 
 def _subnormals_compare() -> bool:
@@ -91,14 +92,22 @@ def packed_order(
     if int(past - first) > n_zero or (n_zero and n_zero != int(np.count_nonzero(s == 0.0))):
         return None
     label = np.bitwise_and(key, np.int64(1), out=label_out)
-    key >>= np.int64(1)
-    key -= _HALF_RANGE
-    flip = key >> np.int64(63)
-    flip &= _MAGNITUDE
-    key ^= flip
-    del flip
     ss = key.view(np.float64)
-    for step in reversed(steps):  # exact powers of two, back to the original finite values
-        if step != 1.0:
-            ss *= 1.0 / step
+    # back to the scores block by block (the same operations on every entry; the blocks stay
+    # in cache and need no temporary as long as the rows, whose page faults cost about half a
+    # sort at 1e5 rows)
+    block = max(1, min(n, _DECODE_BLOCK))
+    flip = np.empty(block, dtype=np.int64)
+    for i in range(0, n, block):
+        part = key[i:i + block]
+        f = flip[:part.shape[0]]
+        part >>= np.int64(1)
+        part -= _HALF_RANGE
+        np.right_shift(part, np.int64(63), out=f)
+        f &= _MAGNITUDE
+        part ^= f
+        values = ss[i:i + block]
+        for step in reversed(steps):  # exact powers of two, back to the original finite values
+            if step != 1.0:
+                values *= 1.0 / step
     return ss, label

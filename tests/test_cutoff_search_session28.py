@@ -130,3 +130,21 @@ def test_unit_weights_as_one_repeated_value_are_not_copied():
         _prepare(p, y, COSTS, np.broadcast_to(np.float64(np.nan), n))
     with pytest.raises(ValueError, match="sample_weight"):
         _prepare(p, y, COSTS, np.broadcast_to(np.float64(-1.0), n))
+
+
+@pytest.mark.parametrize("n", [1, 5, (1 << 14) - 1, (1 << 14) + 1, 3 * (1 << 14) + 5])
+def test_packed_order_of_signed_scores_matches_its_definition(n):
+    # scores of both signs are turned back from their sorted keys block by block (session 28);
+    # the result must be the scores in ascending order with the negatives first among ties
+    # (np.lexsort's order), bit for bit, across block boundaries, with -0.0 read as 0.0
+    from probwrap._packed_sort import packed_order
+
+    rng = np.random.default_rng(n)
+    s = np.round(rng.normal(size=n) * 3, 1)
+    s[rng.random(n) < 0.05] = -0.0
+    s[rng.random(n) < 0.02] = 1e-100  # (tiny, still exact once scaled)
+    y = (rng.random(n) < 0.4).astype(np.intp)
+    got_s, got_y = packed_order(s, y)
+    order = np.lexsort((y, s + 0.0))
+    np.testing.assert_array_equal(got_s.view(np.int64), (s[order] + 0.0).view(np.int64))
+    np.testing.assert_array_equal(got_y, y[order])
