@@ -19,6 +19,7 @@ from ._cost_policy_summary import (  # the prior-shift wrapper reads these two f
     SUMMARY_BINS,  # noqa: F401
     _summary_interval,
 )
+from ._feature_input import check_feature_input
 from ._heldout import (
     HeldOutClassifierBase,
     HeldOutPredictions,
@@ -332,6 +333,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         check_target_labels(y_arr, "y")
         check_classification_targets(y_arr)
         check_rows_match(X, y_arr.shape[0])
+        check_feature_input(X, self.estimator)
         sw = check_sample_weight(sample_weight, y_arr.shape[0]) if sample_weight is not None else None
         y_index, classes = check_labels(y_arr, name="y")
         if sw is not None:

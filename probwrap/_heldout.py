@@ -34,6 +34,7 @@ from sklearn.utils.metadata_routing import MetadataRouter, MethodMapping, proces
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import column_or_1d, has_fit_parameter
 
+from ._feature_input import check_feature_input
 from ._predictions import (
     HeldOutPredictions,
     ModelOutputError,
@@ -800,6 +801,9 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         check_classification_targets(y_arr)
         n = y_arr.shape[0]
         check_rows_match(X, n)
+        # 1-d X or repeated column names that the model's scikit-learn step refuses: said
+        # here, before the folds, not at the end of a cross-fitting message
+        check_feature_input(X, self.estimator)
         sw = None
         if sample_weight is not None:
             sw = rescale_extreme_weights(check_sample_weight(sample_weight, n), type(self).__name__)

@@ -25,6 +25,7 @@ LAYERS = {
     "_validation": 0,
     "_predictions": 0,
     "_version": 0,
+    "_feature_input": 0,  # 1-d X / repeated column names refused before fitting (wrappers)
     "_packed_sort": 0,  # one-sort score order with the classes (cutoff search, isotonic fit)
     "calibration": 1,
     "decision": 1,

@@ -1,0 +1,161 @@
+"""Two shapes of ``X`` that scikit-learn refuses, said before any model is fitted.
+
+The wrappers hand ``X`` to the inner estimator untouched, so a text pipeline still receives
+its list of strings. When the estimator is one of scikit-learn's that validates ``X`` as a 2-d
+array, two mistakes used to surface only through cross-fitting, as a long "Cross-fitting
+`estimator` ... failed" message with the model's own message (and a printout of the array) at
+its end:
+
+* a 1-d ``X`` (one feature given as a flat array, Series or list): scikit-learn's
+  ``check_array`` refuses every 1-d array ("Expected 2D array, got 1D array instead"), in
+  1.6.1 and in the newest release alike;
+* a DataFrame with duplicate column names: refused by newer scikit-learn (1.9.1: its
+  feature-name check reads the columns through narwhals, "Expected unique column names");
+  scikit-learn 1.6.1 accepts them, so they are refused here only where the installed
+  scikit-learn's own check (``_get_feature_names``) refuses them.
+
+:func:`check_feature_input` raises a short error naming ``X`` and what was expected, but only
+where the estimator's first step is a scikit-learn estimator that takes 2-d input (its tags:
+``two_d_array`` and not ``one_d_array``, ``string`` or ``dict``; a ``FunctionTransformer``
+only with ``validate=True``). Anything else (text vectorisers, dict vectorisers, a
+``FunctionTransformer`` that reshapes, a model from another library) gets ``X`` as before.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+from sklearn.utils import get_tags
+
+from ._validation import plain
+
+__all__ = ["check_feature_input"]
+
+
+def _first_step(estimator: Any) -> Any:
+    """The estimator that first receives ``X``: through ``FrozenEstimator``, probwrap's
+    wrappers (which pass ``X`` on untouched) and the first step of a ``Pipeline``."""
+    from sklearn.frozen import FrozenEstimator
+    from sklearn.pipeline import Pipeline
+
+    for _ in range(20):  # nesting depth; a loop of references cannot hang the fit
+        if isinstance(estimator, FrozenEstimator):
+            estimator = estimator.estimator
+        elif isinstance(estimator, Pipeline):
+            steps = [s for _, s in estimator.steps if s is not None and s != "passthrough"]
+            if not steps:
+                return None
+            estimator = steps[0]
+        elif type(estimator).__module__.startswith("probwrap.") and hasattr(
+                estimator, "estimator"):
+            estimator = estimator.estimator
+        else:
+            return estimator
+    return None
+
+
+def _takes_2d_only(step: Any) -> bool:
+    """Whether ``step`` is a scikit-learn estimator that validates ``X`` as a 2-d array."""
+    if step is None or not type(step).__module__.startswith("sklearn."):
+        return False
+    if type(step).__name__ == "FunctionTransformer" and not getattr(step, "validate", False):
+        return False
+    try:
+        tags = get_tags(step).input_tags
+    except Exception:  # noqa: BLE001 - tags are a hint only; without them, say nothing
+        return False
+    return bool(tags.two_d_array and not (tags.one_d_array or tags.string or tags.dict))
+
+
+def _ndim(X: Any) -> int | None:
+    ndim = getattr(X, "ndim", None)
+    if ndim is not None:
+        try:
+            return int(ndim)
+        except (TypeError, ValueError):
+            return None
+    if isinstance(X, (list, tuple)):
+        try:
+            return int(np.ndim(X))
+        except ValueError:  # ragged nesting: not a shape to judge here
+            return None
+    return None
+
+
+def _duplicate_names(X: Any) -> list:
+    columns = getattr(X, "columns", None)
+    if columns is None or not hasattr(columns, "duplicated"):
+        return []
+    try:
+        repeated = columns[columns.duplicated()]
+    except Exception:  # noqa: BLE001 - a frame library of its own: leave it to the model
+        return []
+    return list(dict.fromkeys(plain(c) for c in repeated.tolist()))
+
+
+def _sklearn_refuses_names(X: Any) -> bool:
+    """Whether the installed scikit-learn's feature-name check refuses ``X``'s columns (1.9.1
+    does for duplicate names; 1.6.1 does not)."""
+    try:
+        from sklearn.utils.validation import _get_feature_names
+    except ImportError:
+        return False
+    try:
+        _get_feature_names(X)
+    except Exception as exc:  # noqa: BLE001 - narwhals' DuplicateError is a ValueError subclass
+        return "unique" in str(exc) or "uplicate" in str(exc)
+    return False
+
+
+def check_feature_input(X: Any, estimator: Any) -> None:
+    """Refuse a 1-d ``X``, or a DataFrame with duplicate column names, where the estimator's
+    first step is a scikit-learn estimator that would refuse it.
+
+    Parameters
+    ----------
+    X : array-like, DataFrame, list, ...
+        The rows given to a wrapper's ``fit``.
+    estimator : estimator
+        The wrapper's inner estimator.
+
+    Raises
+    ------
+    ValueError
+        Naming ``X``, what was expected, and the step that expects it.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from sklearn.linear_model import LogisticRegression
+    >>> check_feature_input(np.zeros((4, 1)), LogisticRegression())  # 2-d: nothing to say
+    >>> check_feature_input(np.zeros(4), LogisticRegression())
+    Traceback (most recent call last):
+    ...
+    ValueError: `X` must be 2-d, shape (n_samples, n_features), for LogisticRegression (scikit-learn refuses 1-d input); got a 1-d ndarray of 4 values. For a single feature pass X.reshape(-1, 1), a one-column DataFrame (series.to_frame()) or [[v] for v in X].
+    """
+    step = _first_step(estimator)
+    if not _takes_2d_only(step):
+        return
+    name = type(step).__name__
+    if _ndim(X) == 1:
+        try:
+            n = len(X)
+        except TypeError:
+            n = None
+        got = "" if n is None else f" of {n} values"
+        raise ValueError(
+            f"`X` must be 2-d, shape (n_samples, n_features), for {name} (scikit-learn refuses "
+            f"1-d input); got a 1-d {type(X).__name__}{got}. "
+            "For a single feature pass X.reshape(-1, 1), a one-column DataFrame "
+            "(series.to_frame()) or [[v] for v in X]."
+        )
+    repeated = _duplicate_names(X)
+    if repeated and _sklearn_refuses_names(X):
+        shown = ", ".join(repr(c) for c in repeated[:5])
+        more = f" and {len(repeated) - 5} more" if len(repeated) > 5 else ""
+        raise ValueError(
+            f"`X` must have distinct column names for {name} (this scikit-learn refuses "
+            f"repeated ones); got {len(repeated)} name(s) used more than once: {shown}{more}. "
+            "Rename or drop the repeated columns."
+        )
