@@ -76,18 +76,21 @@ def test_batch_codes_that_differ_as_text_are_separate_batches(default_scores, tm
 
 def test_the_word_na_is_a_batch_label_and_an_empty_cell_names_its_row(tmp_path, capsys,
                                                                       default_scores):
+    # (session 28: among words the label "NA" stays a batch but is warned about, and among
+    # numbered batches it is refused, tests/test_edge28_cli_batch_na.py; was sites "NA", "01")
     p = default_scores[0][:60]
-    frame = pd.DataFrame({"risk": p, "site": np.repeat(["NA", "01"], 30)})
+    frame = pd.DataFrame({"risk": p, "site": np.repeat(["NA", "EU"], 30)})
     frame.to_csv(tmp_path / "na.csv", index=False)
     code, out, err = _prevalence(capsys, tmp_path / "na.csv", "--batch-column", "site",
                                  "--format", "json")
     assert code == 0, err
-    assert [b["batch"] for b in json.loads(out)["batches"]] == ["NA", "01"]
+    assert [b["batch"] for b in json.loads(out)["batches"]] == ["NA", "EU"]
     frame.loc[4, "site"] = ""
     frame.to_csv(tmp_path / "gap.csv", index=False)
     code, out, err = _prevalence(capsys, tmp_path / "gap.csv", "--batch-column", "site")
     assert code == 1
-    assert "row 6 (counting the header as row 1) has no batch label (--batch-column)" in err
+    assert ("column 'site' (--batch-column): 1 row(s) have no batch label (empty cell), first "
+            "at row 6 (counting the header as row 1)") in err
 
 
 @pytest.mark.parametrize("kind", ["numbers", "dates"])

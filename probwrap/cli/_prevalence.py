@@ -111,13 +111,50 @@ def _batch_labels(frame: Any, args: argparse.Namespace, n: int) -> np.ndarray | 
         raise DataError(f"{args.unlabelled}: no column {plain(args.batch_column)!r} "
                         "(--batch-column)")
     col = frame[args.batch_column]
-    if col.isna().any():
-        row = int(np.flatnonzero(col.isna().to_numpy())[0])
-        raise DataError(f"{args.unlabelled}: column {plain(args.batch_column)!r}, "
-                        f"{row_number(args.unlabelled, row)} has no batch label (--batch-column)")
+    where = f"{args.unlabelled}: column {plain(args.batch_column)!r} (--batch-column)"
+    # an empty or blank cell: no batch label (refused, its rows counted)
+    blank = col.isna().to_numpy() | col.astype(str).str.strip().eq("").to_numpy()
+    if blank.any():
+        rows = np.flatnonzero(blank)
+        raise DataError(f"{where}: {rows.shape[0]} row(s) have no batch label (empty cell), first "
+                        f"at {row_number(args.unlabelled, int(rows[0]))}; give every row its "
+                        "batch, or remove those rows")
     labels = col.astype(str).to_numpy()
+    worded = _missing_words(col)
+    if worded.any():
+        _check_missing_words(col, labels, worded, where, args)
     _warn_out_of_order(col, labels, args)
     return labels
+
+
+def _missing_words(col: Any) -> np.ndarray:
+    """Rows whose batch label is one of the words that tables use for a missing value
+    ("NA", "NaN", "null", "#N/A", ...), read as written from a CSV's batch column."""
+    from ._tables import _MISSING_WORDS
+
+    return col.astype(str).str.strip().isin(_MISSING_WORDS).to_numpy()
+
+
+def _check_missing_words(col: Any, labels: np.ndarray, worded: np.ndarray, where: str,
+                         args: argparse.Namespace) -> None:
+    """A batch label such as "NA" became a batch of its own without a word (session 28).
+
+    Among labels that are otherwise numbers or dates (weeks, days) it cannot be a batch: it is
+    refused, its rows counted and the first named. Among words (sites, regions: "NA" may be
+    North America) it stays a batch, as written, with a warning that counts its rows."""
+    rows = np.flatnonzero(worded)
+    words = ", ".join(repr(plain(w)) for w in dict.fromkeys(labels[rows].tolist()))
+    first = row_number(args.unlabelled, int(rows[0]))
+    rest = _order_keys(col[~worded])
+    if rest is not None and (~worded).any():
+        raise DataError(
+            f"{where}: {rows.shape[0]} row(s) have the batch label {words}, a word for a "
+            f"missing value, among labels that are {rest[1]}, first at {first}; give those "
+            "rows their batch or remove them (a batch that is really called so: rename it)")
+    warn_line("prevalence", (
+        f"{where}: {rows.shape[0]} row(s) have the batch label {words}, also a word for a "
+        f"missing value (first at {first}); they are read as a batch of that name, as "
+        "written. If their batch is missing, give those rows their batch or remove them"))
 
 
 def _order_keys(col: Any) -> tuple[np.ndarray, str] | None:
