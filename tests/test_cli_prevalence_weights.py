@@ -90,45 +90,53 @@ def test_source_weights_are_the_library_and_repeated_rows(files, capsys):
     p2 = np.column_stack([1 - p1, p1])
     lib = em_prior(p2, [0.7, 0.3], sample_weight=w)
     assert weighted["prevalence"] == pytest.approx(lib.prior[1], rel=1e-12)
-    assert weighted["shift_statistic"] == pytest.approx(
-        shift_test(p2, [0.7, 0.3], sample_weight=w).statistic, rel=1e-12)
     # integer weights give the estimate of the file with each row repeated (Saerens's EM by hand)
     rep = np.repeat(p1, w.astype(int))
     assert weighted["prevalence"] == pytest.approx(_saerens_em(rep, 0.3), abs=1e-6)
+    # ftv + 1 (1-4, no common factor) is a count table: since session 28 its cases are
+    # counted with --source-prevalence too, as the library counts them: the statistic of the
+    # repeated rows (before, Kish's size: 50.1 of the 117 cases, 0.43 times it)
+    assert weighted["shift_statistic"] == pytest.approx(
+        shift_test(np.column_stack([1 - rep, rep]), [0.7, 0.3]).statistic, rel=1e-9)
     # the unweighted run differs: the weights did reach the estimate
     plain, _ = _source(capsys, root / "new.csv")
     assert abs(plain["prevalence"] - weighted["prevalence"]) > 1e-3
-    # the likelihood-ratio statistic counts the rows by Kish's size (weights relative):
+    # the likelihood-ratio statistic counts the table's cases:
     # 2 [l(pi_hat) - l(pi_s)] with SciPy's bounded optimiser as the outside reference
-    kish = w * w.sum() / (w @ w)
-
     def loglik(pi):
-        return float(kish @ np.log(pi / 0.3 * p1 + (1 - pi) / 0.7 * (1 - p1)))
+        return float(w @ np.log(pi / 0.3 * p1 + (1 - pi) / 0.7 * (1 - p1)))
 
     best = minimize_scalar(lambda t: -loglik(t), bounds=(1e-9, 1 - 1e-9), method="bounded",
                            options={"xatol": 1e-12})
     assert weighted["shift_statistic"] == pytest.approx(2 * (loglik(best.x) - loglik(0.3)),
                                                         rel=1e-6)
-    # (with --source-prevalence even a count table is relative: "cases" is null)
     assert weighted["weights"] == {"column": "freq", "sum": float(w.sum()),
                                    "effective_rows": pytest.approx(w.sum() ** 2 / (w @ w)),
-                                   "cases": None}
-    # the interval contains the Clopper-Pearson interval of Kish's effective rows
+                                   "cases": float(w.sum())}
+    # the interval contains the Clopper-Pearson interval of the cases
     from probwrap.shift import binomial_interval
 
-    cp = binomial_interval(lib.prior[1], w.sum() ** 2 / (w @ w), 0.95)
+    cp = binomial_interval(lib.prior[1], w.sum(), 0.95)
     assert weighted["interval"][0] <= cp[0] + 1e-12 and weighted["interval"][1] >= cp[1] - 1e-12
 
 
 def test_scaling_the_weights_changes_nothing(files, capsys):
-    root, _, _ = files
-    base, _ = _source(capsys, root / "new.csv", "--weight-column", "freq")
-    for column in ("freq", "small"):  # x1000, and normalised to sum 1
-        scaled, err = _source(capsys, root / "scaled.csv", "--weight-column", column)
-        assert "warning" not in err
-        for key in ("prevalence", "shift_statistic", "shift_pvalue"):
-            assert scaled[key] == pytest.approx(base[key], rel=1e-9), (column, key)
-        assert scaled["interval"] == pytest.approx(base["interval"], rel=1e-9), column
+    root, _, new = files
+    # x1000 (a common factor) and normalised to sum 1 are relative weights, read alike by
+    # Kish's size; the unscaled ftv + 1 is a count table, read as its cases (since session
+    # 28 with --source-prevalence too, tests/test_edge28_cli_source_count_table.py)
+    base, err = _source(capsys, root / "scaled.csv", "--weight-column", "freq")
+    assert "warning" not in err and base["weights"]["cases"] is None
+    scaled, err = _source(capsys, root / "scaled.csv", "--weight-column", "small")
+    assert "warning" not in err
+    for key in ("prevalence", "shift_statistic", "shift_pvalue"):
+        assert scaled[key] == pytest.approx(base[key], rel=1e-9), key
+    assert scaled["interval"] == pytest.approx(base["interval"], rel=1e-9)
+    counted, _ = _source(capsys, root / "new.csv", "--weight-column", "freq")
+    assert counted["prevalence"] == pytest.approx(base["prevalence"], rel=1e-9)
+    w = new.freq.to_numpy()  # the statistic: cases / Kish's size times the relative one
+    assert counted["shift_statistic"] == pytest.approx(
+        base["shift_statistic"] * w.sum() / (w.sum() ** 2 / (w @ w)), rel=1e-9)
     # with --reference, scaled weights (x1000, normalised) read alike; the unscaled ftv + 1 is
     # a count table, read as its cases like the library (test_cli_prevalence_count_table.py)
     code, out, err = run(capsys, "prevalence", "--unlabelled", root / "scaled.csv",
@@ -178,6 +186,7 @@ def test_reference_weights_are_the_library(files, capsys):
 
 
 def test_batches_are_weighted(files, capsys):
+    from probwrap._validation import whole_counts
     from probwrap.shift import em_prior
 
     root, _, new = files
@@ -187,7 +196,10 @@ def test_batches_are_weighted(files, capsys):
         sl = slice(21 * i, 21 * (i + 1))
         lib = em_prior(np.column_stack([1 - p1[sl], p1[sl]]), [0.7, 0.3], sample_weight=w[sl])
         assert b["prevalence"] == pytest.approx(lib.prior[1], rel=1e-12)
-        assert b["effective_rows"] == pytest.approx(w[sl].sum() ** 2 / (w[sl] @ w[sl]))
+        # a batch that is a count table counts its cases (since session 28), others Kish's size
+        cases = whole_counts(w[sl])
+        assert b["effective_rows"] == pytest.approx(
+            w[sl].sum() if cases is not None else w[sl].sum() ** 2 / (w[sl] @ w[sl]))
 
 
 def test_bad_weights_are_refused_naming_the_option(files, capsys, tmp_path):

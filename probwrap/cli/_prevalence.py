@@ -216,7 +216,7 @@ def _classes_by_label(message: str, names: dict[str, Any]) -> str:
 
 def _factor_hint(w: np.ndarray | None, counted: bool) -> str:
     """The end of the few-rows warning for whole-number weights sharing a factor above 1
-    (``counted``: with --reference and no cells, where a count table counts its cases)."""
+    (``counted``: without cells, where a count table counts its cases)."""
     from .._validation import shared_factor
 
     factor = None if w is None or not counted else shared_factor(w)
@@ -477,16 +477,14 @@ def _run(args: argparse.Namespace) -> int:
             # a count table as its cases, as the library reads it; other weights by Kish's size
             ref_settings["reference_weight"] = library_weights(
                 ref_weights, ref_settings.get("reference_cells"))
-        # with --reference, a count table counts its cases (as the library does) unless
-        # cells are given; --source-prevalence reads weights as relative (em_prior, shift_test)
-        cases = (None if args.reference is None or args.cell_column is not None
-                 else table_cases(weights))
+        # a count table counts its cases (as the library does) unless cells are given, with
+        # --reference and (since session 28) with --source-prevalence
+        cases = None if args.cell_column is not None else table_cases(weights)
         check_row_count("prevalence", proba.shape[0] if cases is None else int(cases),
                         args.unlabelled, "unlabelled rows" if cases is None else "unlabelled cases",
                         sample_weight=weights if cases is None else None,
                         counted="the interval and the test of no shift count",
-                        hint=_factor_hint(weights, args.reference is not None
-                                          and args.cell_column is None))
+                        hint=_factor_hint(weights, args.cell_column is None))
         if args.reference is not None:
             ref_cases = (None if args.reference_cell_column is not None
                          else table_cases(ref_weights))
@@ -506,7 +504,7 @@ def _run(args: argparse.Namespace) -> int:
             try:
                 if args.reference is None:
                     out = prevalence_from_source(proba, args.source_prevalence,
-                                                 sample_weight=kish_scaled(weights),
+                                                 sample_weight=library_weights(weights),
                                                  **settings)
                 else:
                     cells = None if args.cell_column is None else _cells(
@@ -521,8 +519,7 @@ def _run(args: argparse.Namespace) -> int:
                 if batch_labels is not None:
                     def one(p: np.ndarray, w: np.ndarray | None, seed: int | None,
                             c: np.ndarray | None) -> dict[str, Any]:
-                        kw = {**settings, "seed": seed, "sample_weight": (
-                            kish_scaled(w) if args.reference is None else library_weights(w, c))}
+                        kw = {**settings, "seed": seed, "sample_weight": library_weights(w, c)}
                         if args.reference is None:
                             return prevalence_from_source(p, args.source_prevalence,
                                                           edge_warning=False, **kw)
@@ -533,8 +530,7 @@ def _run(args: argparse.Namespace) -> int:
 
                     out["batches"] = _by_batch(
                         one, proba, batch_labels, args.seed, weights,
-                        None if args.reference is None else cells,
-                        cases=args.reference is not None)
+                        None if args.reference is None else cells, cases=True)
                     out["alarm"] = batch_alarm_json(
                         out["batches"], out["source_prevalence"],
                         confidence_level=args.confidence, reference=args.alarm_reference,
@@ -614,10 +610,10 @@ def register(subparsers: Any) -> None:
     parser.add_argument(
         "--weight-column", metavar="W", default=None,
         help="column of row weights of the --unlabelled file (numbers >= 0, not all 0; only "
-        "their ratios matter: counted by Kish's effective size, except that with --reference "
-        "and no --cell-column a count table (whole numbers, some above 1, no common factor "
-        "above 1) counts its cases, as one row per case would); the reference file's rows "
-        "take --reference-weight-column",
+        "their ratios matter: counted by Kish's effective size, except that without "
+        "--cell-column a count table (whole numbers, some above 1, no common factor above 1) "
+        "counts its cases, as one row per case would); the reference file's rows take "
+        "--reference-weight-column",
     )
     add_weight_dots_flag(parser)
     parser.add_argument(
