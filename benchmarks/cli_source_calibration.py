@@ -72,33 +72,38 @@ def batch(rng, yt, pi, shift):
     return np.concatenate([rng.choice(pos, k), rng.choice(neg, n - k)])
 
 
-rows = []
-for name, X, y in sets():
-    for seed in range(4):
-        rng = np.random.default_rng(seed)
-        idx = rng.permutation(len(y))
-        tr, te = idx[: len(y) // 2], idx[len(y) // 2:]
-        pi = float(y[tr].mean())
-        for mname, make in MODELS.items():
-            p = make().fit(X[tr], y[tr]).predict_proba(X[te])[:, 1]
-            for shift in ("none", "doubled", "halved"):
-                sel = batch(rng, y[te], pi, shift)
-                with warnings.catch_warnings(record=True) as caught:
-                    warnings.simplefilter("always")
-                    out = prevalence_from_source(p[sel], pi, n_resamples=0)
-                warned = any("Calibrated scores move less" in str(w.message) for w in caught)
-                rows.append(dict(set=name, seed=seed, model=mname, shift=shift, pi=pi,
-                                 true=y[te][sel].mean(), est=out["prevalence"],
-                                 pvalue=out["shift_pvalue"], warned=warned))
-df = pd.DataFrame(rows)
-est = df.est.clip(1e-4, 1 - 1e-4)
-df["harm"] = (np.log(est / (1 - est)) - np.log(df.true / (1 - df.true))).abs() > 0.5
-df["kind"] = np.where(df.model.str.endswith("_cal"), "calibrated", "uncalibrated")
-g = df.groupby(["kind", "shift"])
-print(pd.DataFrame({
-    "batches": g.size(), "warned": g.warned.mean(), "harmed": g.harm.mean(),
-    "warned_if_harmed": g.apply(lambda x: x.warned[x.harm].mean(), include_groups=False),
-    "warned_if_not": g.apply(lambda x: x.warned[~x.harm].mean(), include_groups=False),
-}).round(2).to_string())
-print(df.groupby(["model", "shift"]).warned.mean().unstack().round(2).to_string())
-print(df[df.warned].groupby(["set", "model"]).size().to_string())
+def main() -> None:
+    rows = []
+    for name, X, y in sets():
+        for seed in range(4):
+            rng = np.random.default_rng(seed)
+            idx = rng.permutation(len(y))
+            tr, te = idx[: len(y) // 2], idx[len(y) // 2:]
+            pi = float(y[tr].mean())
+            for mname, make in MODELS.items():
+                p = make().fit(X[tr], y[tr]).predict_proba(X[te])[:, 1]
+                for shift in ("none", "doubled", "halved"):
+                    sel = batch(rng, y[te], pi, shift)
+                    with warnings.catch_warnings(record=True) as caught:
+                        warnings.simplefilter("always")
+                        out = prevalence_from_source(p[sel], pi, n_resamples=0)
+                    warned = any("Calibrated scores move less" in str(w.message) for w in caught)
+                    rows.append(dict(set=name, seed=seed, model=mname, shift=shift, pi=pi,
+                                     true=y[te][sel].mean(), est=out["prevalence"],
+                                     pvalue=out["shift_pvalue"], warned=warned))
+    df = pd.DataFrame(rows)
+    est = df.est.clip(1e-4, 1 - 1e-4)
+    df["harm"] = (np.log(est / (1 - est)) - np.log(df.true / (1 - df.true))).abs() > 0.5
+    df["kind"] = np.where(df.model.str.endswith("_cal"), "calibrated", "uncalibrated")
+    g = df.groupby(["kind", "shift"])
+    print(pd.DataFrame({
+        "batches": g.size(), "warned": g.warned.mean(), "harmed": g.harm.mean(),
+        "warned_if_harmed": g.apply(lambda x: x.warned[x.harm].mean(), include_groups=False),
+        "warned_if_not": g.apply(lambda x: x.warned[~x.harm].mean(), include_groups=False),
+    }).round(2).to_string())
+    print(df.groupby(["model", "shift"]).warned.mean().unstack().round(2).to_string())
+    print(df[df.warned].groupby(["set", "model"]).size().to_string())
+
+
+if __name__ == "__main__":
+    main()
