@@ -311,3 +311,30 @@ def test_spark_monitor_warns_once_per_condition_naming_the_batches(spark, cancer
         shift.monitor(rows.iloc[:20], batch_size=20)
     assert message.endswith(str(mem[0].message))
     assert table["n_rows"].tolist() == [20] * 10 + [50]
+
+
+def test_costs_get_the_in_memory_checks_on_spark_rows(spark, cancer, monkeypatch):
+    # (session 28, tests/test_edge28_distributed_costs.py for Dask) through the tallies: a
+    # cost DataFrame of other labels gets the in-memory message word for word; costs(X) is
+    # called on the first rows (at most 1,000) to learn the actions, and its shape error says so
+    import probwrap.scale._tally as tally_module
+
+    monkeypatch.setattr(tally_module, "KEPT_ROWS", 0)
+    X, y, lr, _ = cancer
+    frame = spark.createDataFrame(X.assign(label=y))
+    model = FrozenEstimator(lr)
+    bad = pd.DataFrame([[0.0, 1.0], [5.0, 0.0]], index=["benign", "malignant"])
+    with pytest.raises(ValueError) as memory:
+        CostPolicyWrapper(model, costs=bad, strategy="tuned").fit(X, y)
+    with pytest.raises(ValueError) as remote:
+        CostPolicyWrapper(model, costs=bad, strategy="tuned").fit(frame, "label")
+    assert str(remote.value) == str(memory.value)
+    assert "rows are labelled ['benign', 'malignant'], not the classes [0, 1]" in str(
+        memory.value)
+    with pytest.raises(ValueError) as remote:
+        CostPolicyWrapper(model, costs=lambda Xb: np.array([[0.0, 1.0], [5.0, 0.0]])).fit(
+            frame, "label")
+    assert str(remote.value).startswith(
+        "`costs(X)` must have shape (569, 2, 'n_actions') (one cost matrix per row); got "
+        "shape (2, 2). (`costs` is called on the Dask or Spark rows block by block, here on a "
+        "block of 569 rows")

@@ -421,7 +421,8 @@ def _cost_block(policy, Xb, yb, wb):
     proba = predict_block(policy.estimator_, "predict_proba", Xb, k)
     unit = weight_unit_of(w.max())
     w = w / unit if unit != 1.0 else w
-    costs = policy._costs_for(Xb)
+    costs = (policy.cost_matrix_ if policy.cost_matrix_ is not None
+             else _block_row_costs(policy, Xb, k))
     chosen = policy._decide(proba, costs)
     if costs.ndim == 2:
         realised = costs[y, chosen]
@@ -437,7 +438,26 @@ def first_block_row_costs(
     of actions. (``y`` and ``sample_weight`` tell Spark which columns are not features.)"""
     from ._rows import rows_of
 
-    return rows_of(X, y, sample_weight, policy.estimator).apply_first(policy._row_costs, k)
+    return rows_of(X, y, sample_weight, policy.estimator).apply_first(
+        lambda Xb, n_classes: _block_row_costs(policy, Xb, n_classes), k)
+
+
+def _block_row_costs(policy: Any, Xb: Any, k: int) -> np.ndarray:
+    """``costs(X)`` of one Dask block or Spark batch, validated as in memory
+    (:func:`probwrap.decision.check_row_costs` through ``policy._row_costs``, the same
+    message), with the block named: the shape it expects counts the block's rows, not all the
+    rows, which read as a wrong row count (a Dask array of 569 rows in blocks of 200: "must have
+    shape (200, 2, 'n_actions')")."""
+    try:
+        return policy._row_costs(Xb, k)
+    except ValueError as exc:
+        if "shape" not in str(exc):  # NaN costs: nothing about the block to add
+            raise
+        n = Xb.shape[0] if hasattr(Xb, "shape") else len(Xb)
+        raise ValueError(
+            f"{exc} (`costs` is called on the Dask or Spark rows block by block, here on a "
+            f"block of {n} rows: it must return one cost matrix per row of the X it is given.)"
+        ) from exc
 
 
 def heldout_cost_dask(policy: Any, X: Any, y: Any, sample_weight: Any) -> float:
