@@ -17,8 +17,10 @@ its end:
 :func:`check_feature_input` raises a short error naming ``X`` and what was expected, but only
 where the estimator's first step is a scikit-learn estimator that takes 2-d input (its tags:
 ``two_d_array`` and not ``one_d_array``, ``string`` or ``dict``; a ``FunctionTransformer``
-only with ``validate=True``). Anything else (text vectorisers, dict vectorisers, a
-``FunctionTransformer`` that reshapes, a model from another library) gets ``X`` as before.
+only with ``validate=True``; the step is found as :func:`_first_step` says). Anything else
+(text vectorisers, dict vectorisers, a ``FunctionTransformer`` that reshapes, a model from
+another library, a ``FeatureUnion`` or other step whose inner steps cannot be told) gets ``X``
+as before.
 """
 
 from __future__ import annotations
@@ -34,22 +36,38 @@ __all__ = ["check_feature_input"]
 
 
 def _first_step(estimator: Any) -> Any:
-    """The estimator that first receives ``X``: through ``FrozenEstimator``, probwrap's
-    wrappers (which pass ``X`` on untouched) and the first step of a ``Pipeline``."""
+    """The estimator that first receives ``X``, or None where that cannot be told.
+
+    Followed through the steps that hand ``X`` on as it is: ``FrozenEstimator``, probwrap's
+    wrappers, the first step of a ``Pipeline``, scikit-learn's parameter searches
+    (``GridSearchCV``, ...) and ``CalibratedClassifierCV``. A scikit-learn ensemble of one
+    estimator (forests, bagging, boosting) validates ``X`` itself and is judged by its own
+    tags. Any other step around estimators (``FeatureUnion``, ``ColumnTransformer``, voting,
+    stacking, one-vs-rest, ...) may reach steps that take 1-d input: None, nothing is judged
+    (a ``GridSearchCV`` or ``FeatureUnion`` of text vectorisers reports the tags of a 2-d
+    model)."""
+    from sklearn.calibration import CalibratedClassifierCV
+    from sklearn.ensemble import BaseEnsemble
     from sklearn.frozen import FrozenEstimator
     from sklearn.pipeline import Pipeline
 
     for _ in range(20):  # nesting depth; a loop of references cannot hang the fit
-        if isinstance(estimator, FrozenEstimator):
-            estimator = estimator.estimator
-        elif isinstance(estimator, Pipeline):
+        if isinstance(estimator, Pipeline):
             steps = [s for _, s in estimator.steps if s is not None and s != "passthrough"]
             if not steps:
                 return None
             estimator = steps[0]
-        elif type(estimator).__module__.startswith("probwrap.") and hasattr(
-                estimator, "estimator"):
+        elif isinstance(estimator, (FrozenEstimator, CalibratedClassifierCV)) or (
+                type(estimator).__module__.startswith(("probwrap.", "sklearn.model_selection."))
+                and type(estimator).__name__.endswith(("Wrapper", "SearchCV"))
+                and hasattr(estimator, "estimator")):
             estimator = estimator.estimator
+        elif isinstance(estimator, BaseEnsemble):
+            return estimator
+        elif any(hasattr(estimator, name) for name in (
+                "transformer_list", "transformers", "estimators")) or hasattr(
+                getattr(estimator, "estimator", None), "fit"):
+            return None
         else:
             return estimator
     return None

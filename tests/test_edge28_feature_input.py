@@ -19,10 +19,12 @@ import numpy as np
 import pandas as pd
 import pytest
 from sklearn.datasets import load_breast_cancer
-from sklearn.feature_extraction.text import CountVectorizer
+from sklearn.ensemble import RandomForestClassifier
+from sklearn.feature_extraction.text import CountVectorizer, TfidfVectorizer
 from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
-from sklearn.pipeline import make_pipeline
+from sklearn.model_selection import GridSearchCV
+from sklearn.pipeline import make_pipeline, make_union
 from sklearn.preprocessing import FunctionTransformer
 
 from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
@@ -102,13 +104,42 @@ def _notes(n, seed):
     return notes, y
 
 
+@pytest.mark.parametrize("make, named", [
+    (lambda: GridSearchCV(_model(), {"C": [0.1, 1.0]}, cv=3), "LogisticRegression"),
+    (lambda: CalibrationWrapper(_model(), method="platt"), "LogisticRegression"),
+    (lambda: RandomForestClassifier(n_estimators=5, random_state=0), "RandomForestClassifier"),
+], ids=["search", "nested wrapper", "forest"])
+def test_the_step_named_is_the_one_that_refuses(cancer, make, named):
+    X, y = cancer
+    with pytest.raises(ValueError, match=r"2D array|2-dimensional|^`X` must be 2-d"):
+        make().fit(X[:, 0], y)  # scikit-learn refuses it itself (the inner wrapper: ours)
+    with pytest.raises(ValueError, match=rf"^`X` must be 2-d, shape \(n_samples, n_features\), "
+                                         rf"for {named} "):
+        CostPolicyWrapper(make(), costs={"fp": 1.0, "fn": 5.0}).fit(X[:, 0], y)
+
+
+def _text_models():
+    """Models over a list of strings whose outer step's tags say 2-d input (a search and a
+    union report the tags of a 2-d model): the check must not judge them."""
+    def vectorised():
+        return make_pipeline(CountVectorizer(), LogisticRegression(max_iter=1000))
+
+    return {
+        "pipeline": vectorised,
+        "search": lambda: GridSearchCV(vectorised(), {"logisticregression__C": [0.1, 1.0]},
+                                       cv=3),
+        "union": lambda: make_pipeline(make_union(CountVectorizer(), TfidfVectorizer()),
+                                       LogisticRegression(max_iter=1000)),
+    }
+
+
+@pytest.mark.parametrize("text", list(_text_models()))
 @pytest.mark.parametrize("wrapper", list(WRAPPERS))
-def test_text_pipeline_over_a_list_of_strings_keeps_working(wrapper):
+def test_text_pipeline_over_a_list_of_strings_keeps_working(wrapper, text):
     notes, y = _notes(300, seed=0)
-    text = make_pipeline(CountVectorizer(), LogisticRegression(max_iter=1000))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        model = WRAPPERS[wrapper](text).fit(notes, y)
+        model = WRAPPERS[wrapper](_text_models()[text]()).fit(notes, y)
     proba = model.predict_proba(notes[:50])
     assert proba.shape == (50, 2) and np.allclose(proba.sum(axis=1), 1.0)
     # the damaged notes get the higher probability on average (the model did read the words)
