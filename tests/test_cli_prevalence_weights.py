@@ -124,7 +124,7 @@ def test_scaling_the_weights_changes_nothing(files, capsys):
     root, _, new = files
     # x1000 (a common factor) and normalised to sum 1 are relative weights, read alike by
     # Kish's size; the unscaled ftv + 1 is a count table, read as its cases (since session
-    # 28 with --source-prevalence too, tests/test_edge28_cli_source_count_table.py)
+    # 28 with --source-prevalence too, tests/test_cli_source_prevalence_count_table.py)
     base, err = _source(capsys, root / "scaled.csv", "--weight-column", "freq")
     assert "warning" not in err and base["weights"]["cases"] is None
     scaled, err = _source(capsys, root / "scaled.csv", "--weight-column", "small")

@@ -77,7 +77,7 @@ def test_batch_codes_that_differ_as_text_are_separate_batches(default_scores, tm
 def test_the_word_na_is_a_batch_label_and_an_empty_cell_names_its_row(tmp_path, capsys,
                                                                       default_scores):
     # (session 28: among words the label "NA" stays a batch but is warned about, and among
-    # numbered batches it is refused, tests/test_edge28_cli_batch_na.py; was sites "NA", "01")
+    # numbered batches it is refused, tests/test_cli_batch_missing_labels.py; was sites "NA", "01")
     p = default_scores[0][:60]
     frame = pd.DataFrame({"risk": p, "site": np.repeat(["NA", "EU"], 30)})
     frame.to_csv(tmp_path / "na.csv", index=False)

@@ -314,7 +314,7 @@ def test_spark_monitor_warns_once_per_condition_naming_the_batches(spark, cancer
 
 
 def test_costs_get_the_in_memory_checks_on_spark_rows(spark, cancer, monkeypatch):
-    # (session 28, tests/test_edge28_distributed_costs.py for Dask) through the tallies: a
+    # (session 28, tests/test_distributed_cost_checks.py for Dask) through the tallies: a
     # cost DataFrame of other labels gets the in-memory message word for word; costs(X) is
     # called on the first rows (at most 1,000) to learn the actions, and its shape error says so
     import probwrap.scale._tally as tally_module
