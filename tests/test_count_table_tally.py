@@ -32,12 +32,15 @@ da = pytest.importorskip("dask.array")
 def _table(seed=3, n=4000):
     """An invented parcel table: three route features, damaged or not, each row a cell seen
     1-6 times (a frozen model fitted on other parcels, miscalibrated by a slope of 1.5). The
-    features are on a grid of 0.1 (about 60 values a column), so the rows repeated by their
+    features are on a grid of 0.5 (about 14 values a column), so the rows repeated by their
     counts are not copies of a row (``copied_case_cells``): in memory a row's cases are then
     split among auto's folds, as a tally, which cannot see the features, splits them (with
-    continuous features the in-memory fit keeps them together since session 27)."""
+    continuous features the in-memory fit keeps them together since session 27). On a grid of
+    0.1 (the table before session 28) the cases share whole rows about ten times as often as
+    three independent columns of 60 values give them, which reads as copies of a row since
+    session 28 (``_whole_rows_beyond_chance``)."""
     rng = np.random.default_rng(seed)
-    X = np.round(rng.normal(size=(n, 3)), 1)
+    X = np.round(2.0 * rng.normal(size=(n, 3))) / 2.0
     logit = X @ np.array([1.0, -0.7, 0.4]) - 1.0
     y = (rng.random(n) < expit(1.5 * logit)).astype(int)
     w = rng.integers(1, 7, size=n).astype(float)
