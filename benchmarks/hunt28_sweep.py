@@ -48,11 +48,13 @@ Printed: crashes, exact 0/1, geometric mean | worst | cells above 1.10x (and 0.0
 sigmoid's log loss and Brier score, with a probwrap warning / without, the same over the model's
 own, the quiet cells worst first, the cost over the sigmoid's Bayes cutoff, what weights did.
 
-Run: ``nice python benchmarks/hunt28_sweep.py --quick`` (four sets, four models, 40 and 100 rows,
-cross and frozen, seed 0; a few minutes), ``nice python benchmarks/hunt28_sweep.py --csv F`` (every
-set and model, one draw: the numbers of docs/small_data.md, "The session-28 hunt"),
-``--sets bfeed --models qda --modes cross --sizes 40 --seeds 5`` (a redraw), ``--from-csv A,B``,
-``--list``, ``--no-fixed``, ``--no-weights``.
+Run from the repository root with ``PYTHONPATH=$PWD`` (so that the checkout's probwrap is
+imported): ``nice python benchmarks/hunt28_sweep.py --quick`` (four sets, four models, 40 and 100
+rows, cross and frozen, seed 0; about ten minutes on the shared machine),
+``nice python benchmarks/hunt28_sweep.py --csv F`` (every set and model, one draw: the numbers
+of docs/small_data.md, "The session-28 hunt"), ``--sets framing,tipi --modes cross,frozen
+--sizes 100 --weight-kinds wcount --seeds 5`` (the count-weight cells redrawn), ``--from-csv
+A,B``, ``--list``, ``--no-fixed``, ``--no-weights``.
 """
 
 from __future__ import annotations
