@@ -44,6 +44,9 @@ Run: nice python benchmarks/shift_real_hunt28.py --quick          (seed 1, 40 la
                                                  [--models lr knn] [--out FILE.csv]
      nice python benchmarks/shift_real_hunt28.py --rerun27 --seed-start 1 --seeds 1 --out F.csv
      nice python benchmarks/shift_real_hunt28.py --classify F1.csv F2.csv
+     nice python benchmarks/shift_real_hunt28.py --cap-what-if 0.85 F1.csv F2.csv
+                         (cells with p >= 0.10 and a move made, rebuilt; the per-draw cap at
+                         0.85 x 2 %: before and after; about 10 minutes for 134 cells)
 Results: docs/prior_shift.md, "The session-28 hunt (session 28)".
 """
 
@@ -51,6 +54,7 @@ from __future__ import annotations
 
 import argparse
 import time
+import warnings
 
 import numpy as np
 import pandas as pd
@@ -182,6 +186,81 @@ def print_classes(df: pd.DataFrame) -> None:
                 max_colwidth=40, float_format=lambda v: f"{v:.3f}"))
 
 
+def _cell(sets_by_name: dict, row) -> tuple:
+    """Rebuild one row cell of ``shift_real_hunt24.one`` (the weights-one wrapper, fitted and
+    adapted) from its CSV row: (wrapper, batch rows, batch labels, classes)."""
+    from sklearn.frozen import FrozenEstimator
+
+    from probwrap import PriorShiftWrapper
+
+    X, y = sets_by_name[row.set]
+    seed, kind = int(row.seed), row.kind
+    classes = np.unique(y)
+    A, B, C = h24.split3(y, seed)
+    model = h24.make_model(row.model).fit(X.iloc[A], y[A])
+    pool = np.concatenate([B, C])
+    source = np.array([np.mean(y[pool] == c) for c in classes])
+    kinds, j = h24.kinds_for(source)
+    rng_t = np.random.default_rng([seed, 11])
+    shares = {kd: h24.target_shares(source, kd, j, rng_t) for kd in kinds}
+    n_lab = int(row.n_lab)
+    L = h24.labelled(B, y[B], classes, n_lab, np.random.default_rng([seed, 17, n_lab]))
+    U = np.setdiff1d(pool, L)
+    size = h24.draw_size(y[U], classes, shares[kind])
+    b = U[h24.draw(y[U], classes, shares[kind], size,
+                   np.random.default_rng([seed, 13, n_lab, kinds.index(kind)]))]
+    est = FrozenEstimator(model) if row.variant == "frozen" else h24.make_model(row.model)
+    psw = PriorShiftWrapper(est, random_state=seed)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        psw.fit(X.iloc[L], y[L], sample_weight=np.ones(len(L)))
+        psw.adapt(X.iloc[b].reset_index(drop=True), sample_weight=np.ones(len(b)))
+    return psw, X.iloc[b].reset_index(drop=True), y[b], classes
+
+
+def cap_what_if(df: pd.DataFrame, factor: float) -> pd.DataFrame:
+    """Every cell the per-draw cap can touch (p >= 0.10 and a move made) rebuilt, and its
+    weight recomputed from the same estimate with the cap aiming at ``factor`` x 2 %: adapted /
+    none before and after. A what-if; the library is not changed."""
+    from probwrap._prior_shift import _gate, moved_prior
+    from probwrap.shift._shift_tests import DRAW_HARM_LIMIT, draw_capped_weight
+
+    by_name = {n: (X, y) for n, X, y in [*sets(), *h27.sets()]}
+    touch = df[(df.pvalue >= 0.10) & ((df.r_none - 1).abs() > 1e-9) & df.set.isin(by_name)]
+    out = []
+    for _, r in touch.iterrows():
+        psw, Xu, yu, classes = _cell(by_name, r)
+        col = np.searchsorted(classes, yu)
+
+        def ll(P, col=col):
+            return float(-np.mean(np.log(np.clip(P[np.arange(len(col)), col], 1e-12, 1))))
+
+        l0, la = ll(psw._calibrated(Xu)), ll(psw.predict_proba(Xu))
+        res = psw.prior_estimate_
+        w, _, free = _gate(res, len(classes), psw.max_harm, psw.min_evidence)
+        w2 = min(w, draw_capped_weight(res.null_harm_scale, res.null_move_ratio,
+                                       res.shift_statistic, free, DRAW_HARM_LIMIT * factor))
+        psw.applied_prior_ = moved_prior(psw.source_prior_, res.prior, w2)
+        out.append(dict(set=r.set, model=r.model, variant=r.variant, n_lab=r.n_lab,
+                        seed=r.seed, kind=r.kind, csv_r=r.r_none, old_r=la / l0,
+                        new_r=ll(psw.predict_proba(Xu)) / l0, w=w, w_new=w2))
+        print(f"{r.set[:26]:26s} {r.model} {r.variant:6s} s{r.seed} {r.kind:4s} "
+              f"{la / l0:.4f} -> {out[-1]['new_r']:.4f} (weight {w:.3f} -> {w2:.3f})", flush=True)
+    o = pd.DataFrame(out)
+    if not len(o):
+        return o
+    no, mv = o[o.kind == "x1"], o[o.kind != "x1"]
+    d = np.log(mv.new_r) - np.log(mv.old_r)
+    print(f"\ncap at {factor:g} x 2 %: {len(o)} cells touchable, rebuilt exactly in "
+          f"{int(((o.csv_r - o.old_r).abs() < 1e-9).sum())}; weight lowered in "
+          f"{int((o.w_new < o.w - 1e-12).sum())}; no shift > 1.02: {int((no.old_r > 1.02).sum())} "
+          f"-> {int((no.new_r > 1.02).sum())} (worst {no.old_r.max():.4f} -> "
+          f"{no.new_r.max():.4f}); shifted worse than none {int((mv.old_r > 1).sum())} -> "
+          f"{int((mv.new_r > 1).sum())}; shifted cells made worse {int((d > 1e-9).sum())} of "
+          f"{len(mv)} (mean {np.expm1(d.mean()):+.2%}, largest {np.expm1(d.max()):+.2%})")
+    return o
+
+
 def main() -> None:
     """Run the sweep, or ``--classify`` saved runs."""
     ap = argparse.ArgumentParser()
@@ -196,7 +275,14 @@ def main() -> None:
     ap.add_argument("--quick", action="store_true",
                     help="seed 1, 40 labelled rows, lr and knn, no count tables")
     ap.add_argument("--classify", nargs="*", help="CSV files written by --out: list quiet harms")
+    ap.add_argument("--cap-what-if", nargs="+", metavar=("FACTOR", "CSV"),
+                    help="the per-draw cap aiming at FACTOR x 2 %% on the saved runs' cells")
     a = ap.parse_args()
+    if a.cap_what_if:
+        _install_models()
+        cap_what_if(pd.concat([pd.read_csv(f) for f in a.cap_what_if[1:]], ignore_index=True),
+                    float(a.cap_what_if[0]))
+        return
     if a.classify:
         df = pd.concat([pd.read_csv(f) for f in a.classify], ignore_index=True)
         summarise(df)
