@@ -1041,7 +1041,17 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         """
         if sw is None or not self._split_table_cases or split_params:
             return None
-        if set(est_params) != {"sample_weight"} or get_config().get("enable_metadata_routing"):
+        if set(est_params) != {"sample_weight"}:
+            return None
+        if get_config().get("enable_metadata_routing") and (
+            est_params["sample_weight"] is not sw
+            or not has_fit_parameter(self.estimator, "sample_weight")
+        ):
+            # routing on: only where the model receives the wrapper's own weights, as with
+            # routing off (a model whose fit takes them, requesting them by their own name);
+            # weights requested under another name, or reaching a Pipeline's steps, keep the
+            # rows as the folds' units, as routing off does (session 28: before, routing on
+            # always kept the rows, so a count table gave another wrapper than routing off)
             return None
         cv = self.cv if self.cv is not None else 5
         if not isinstance(cv, numbers.Integral) or isinstance(cv, bool):
