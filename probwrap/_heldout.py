@@ -754,6 +754,19 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             routed = process_routing(self, "fit", sample_weight=sample_weight, **fit_params)
             return dict(routed.estimator.fit), dict(routed.splitter.split)
         params = dict(fit_params)
+        split_params = {}
+        if "groups" in params and not has_fit_parameter(self.estimator, "groups"):
+            # as GridSearchCV's and cross_validate's `groups` without routing: for the splitter
+            # (before session 28 they went to the model's fit, a TypeError, or a group splitter
+            # said "The 'groups' parameter should not be None")
+            cv = self.cv if self.cv is not None else 5
+            if isinstance(cv, numbers.Integral) or isinstance(cv, str):
+                raise ValueError(
+                    f"`groups` were passed to fit, but `cv={plain(cv)!r}` makes stratified folds, "
+                    "which do not read groups. To keep each group in one fold, pass a group "
+                    "splitter, e.g. `cv=GroupKFold(5)` (sklearn.model_selection)."
+                )
+            split_params["groups"] = params.pop("groups")
         if sample_weight is not None:
             # weights passed to a step by name (``logisticregression__sample_weight`` for a
             # Pipeline) do reach the model: no warning that it is fitted without them
@@ -783,7 +796,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     UserWarning,
                     stacklevel=3,
                 )
-        return params, {}
+        return params, split_params
 
     def _weights_advice(self) -> str:
         """How to weight the model's own fit too: by the Pipeline's final step's name where
