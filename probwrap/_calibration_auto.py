@@ -15,7 +15,7 @@ from sklearn.utils import check_random_state
 from ._calibration_shares import ABSENT_CLASS_NOTE, class_shares_losses, smoothed_class_shares
 from ._heldout import HeldOutPredictions, case_cells_of, keep_cells_together
 from ._validation import plain
-from ._weights import case_rows
+from ._weights import case_rows, choice_weights
 from .calibration._base import CalibrationMap, WeightScaleWarning, count_weights
 from .calibration._beta import BetaMap
 from .calibration._binning import BinningMap
@@ -597,6 +597,12 @@ class _AutoChoice:
             # different maps; docs/aggregated_outcomes.md, "Count tables and choices")
             ho = _cases_of(ho, cases)
             scores, w = scores[cases], np.ones(cases.shape[0])
+        else:
+            # any other weights are relative for the choice: the candidates are fitted on them
+            # rescaled to Kish's size, so their scale moves no choice (session 28; before,
+            # weights summing to at least the rows were counted as they stood, and x1,000 chose
+            # another map on wine and iris)
+            w = choice_weights(w, ho)
         y = ho.y_index
         binary = scores.ndim == 1
         names = self._auto_names(y.shape[0], 1 if binary else scores.shape[1])

@@ -20,7 +20,7 @@ from ._column_models import ProbabilityColumn
 from ._cost_policy_summary import CURVE_POINTS, SMALL_HELDOUT_ROWS, _heldout_summary
 from ._heldout import row_count
 from ._validation import plain
-from ._weights import counted_rows, warn_shared_factor_table
+from ._weights import choice_weights, counted_rows, warn_shared_factor_table
 from .calibration._base import FewClassRowsWarning, WeightScaleWarning, count_weights
 from .decision import (
     apply_class_offsets,
@@ -606,9 +606,14 @@ class _RuleFitting:
                 max_points=None if keep else CURVE_POINTS,
             )
             anchor, self.cutoff_anchor_map_ = plugin_cutoff(matrix), None
+            # the anchor's map and the settling test read weights that are not a count table
+            # as relative (Kish's size), so their scale moves no cutoff (session 28; before,
+            # weights summing to at least the rows counted as they stood: x1,000 moved the
+            # cutoff on breast cancer from 0.20 to 0.28)
+            w_choice = choice_weights(ho.sample_weight, ho)
             if not getattr(ho, "from_tally", False):
                 anchor, self.cutoff_anchor_map_ = recalibrated_plugin_cutoff(
-                    p, ho.y_index, ho.sample_weight, plugin_cutoff(matrix), self.random_state,
+                    p, ho.y_index, w_choice, plugin_cutoff(matrix), self.random_state,
                     crossfit=ho.n_folds > 0,
                     # cross-fitted with a count table's cells kept together in the folds: the
                     # held-out rows are predicted cell by cell, so the cells are the units
@@ -623,7 +628,7 @@ class _RuleFitting:
                     else ho.sample_weight, "CostPolicyWrapper(strategy='tuned')",
                     "the map behind the cutoff's anchor and its row bounds", stacklevel=4)
             self.cutoff_ = settle_cutoff(p, ho.y_index, matrix, res,
-                                         sample_weight=ho.sample_weight, anchor=anchor).cutoff
+                                         sample_weight=w_choice, anchor=anchor).cutoff
             self._warn_few_class_rows(ho)
             if getattr(ho, "from_tally", False) and ho.response == "predict_proba":
                 self.cutoff_ = _cutoff_at_bin_edge(self.tally_, self.cutoff_)
@@ -710,7 +715,15 @@ class _RuleFitting:
             self._warn_weight_scale(ho)
             res = tune_class_offsets(proba, ho.y_index, costs, sample_weight=ho.sample_weight)
             offsets = settle_class_offsets(proba, ho.y_index, costs, res.offsets,
-                                           sample_weight=ho.sample_weight).offsets
+                                           sample_weight=choice_weights(ho.sample_weight,
+                                                                        ho)).offsets
+            if not getattr(ho, "from_tally", False):
+                # (as for the binary cutoff: a table whose counts share a factor is read as
+                # relative weights, which moved the offsets on wine and iris without a word)
+                warn_shared_factor_table(
+                    getattr(ho, "row_weight", None) if getattr(ho, "table_row", None) is not None
+                    else ho.sample_weight, "CostPolicyWrapper(strategy='tuned')",
+                    "the class offsets' settling test", stacklevel=4)
             self._warn_certain_rows(proba, ho.sample_weight)
         else:
             offsets = np.zeros(k)

@@ -16,7 +16,7 @@ import numpy as np
 from ._validation import COUNT_TABLE_MAX_CASES, case_rows, counted_rows, shared_factor, whole_counts
 from .calibration._base import WeightScaleWarning, count_weights
 
-__all__ = ["COUNT_TABLE_MAX_CASES", "case_rows", "count_scale_weights", "counted_rows",
+__all__ = ["COUNT_TABLE_MAX_CASES", "case_rows", "choice_weights", "count_scale_weights", "counted_rows",
            "natural_spline_basis", "shared_factor", "table_dispersion", "warn_count_reading", "warn_count_summary",
            "warn_overdispersed_table", "warn_shared_factor_table", "whole_counts"]
 
@@ -47,6 +47,43 @@ def count_scale_weights(w: np.ndarray, owner: str, what: str, *, stacklevel: int
             WeightScaleWarning,
             stacklevel=stacklevel,
         )
+    return out
+
+
+def choice_weights(w: np.ndarray, ho: object = None) -> np.ndarray:
+    """``w`` as the choices read it (``auto``'s candidate fits, the tuned rule's anchor map and
+    settling test): a count table (:func:`whole_counts`) keeps its counts; any other weights
+    are relative and are rescaled to sum to Kish's (1965) effective sample size
+    ``(sum w)**2 / sum w**2`` of their positive rows, so that multiplying every weight by a
+    constant changes no choice (docs/weights.md; before session 28 weights that summed to at
+    least the rows were counted as they stood, so x1,000 chose another map on wine and iris).
+
+    Unit weights (and 0/1 weights) are returned as they are. ``ho`` (held-out predictions) of a
+    count table cross-fitted by its cases or of a Dask or Spark tally keeps its weights: they
+    are cases or rows of bins, counted by the caller.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> a = choice_weights(np.array([0.5, 1.5, 2.5]))
+    >>> b = choice_weights(np.array([0.5, 1.5, 2.5]) * 1e3)
+    >>> bool(np.allclose(a, b)), round(float(a.sum()), 4)  # Kish's size: 4.5**2 / 8.75
+    (True, 2.3143)
+    >>> choice_weights(np.array([3.0, 1.0, 2.0])).tolist()  # a count table keeps its counts
+    [3.0, 1.0, 2.0]
+    """
+    if ho is not None and (getattr(ho, "table_row", None) is not None
+                           or getattr(ho, "from_tally", False)
+                           or getattr(ho, "tally_cases", False)):
+        return w
+    w = np.asarray(w, dtype=float)
+    positive = w > 0
+    if not positive.any() or whole_counts(w) is not None:
+        return w
+    u = w / float(w.max())  # scaled first: the sum of squares cannot overflow or underflow
+    out = u * (u.sum() / (u @ u))
+    if np.allclose(out, w, rtol=1e-12, atol=0.0):
+        return w  # unit weights, or already on Kish's scale
     return out
 
 
