@@ -846,6 +846,17 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         if self.estimator is None:
             raise ValueError("`estimator` must be a classifier; got None.")
         self._fold_models = None  # set by _cross_fit for a wrapper that keeps them
+        if fit_params and is_frozen(self.estimator):
+            # a frozen model is not refitted and there are no folds to split: nothing reads
+            # them (before session 28 they were dropped without a word, with routing on or off)
+            warnings.warn(
+                f"{type(self).__name__}: fit parameter(s) {sorted(map(str, fit_params))} are not "
+                "used: `estimator` is a FrozenEstimator, which is not refitted here, and all "
+                "rows given to fit are held out (no folds to split). Leave them out, or pass "
+                "an unfitted model to have it cross-fitted with them.",
+                UserWarning,
+                stacklevel=3,
+            )
         if _is_dask(X) or _is_dask(y) or _is_dask(sample_weight):
             # Dask input (frozen estimators only): predictions are tallied block by block on the
             # cluster; the held-out rows are the tally's weighted (bin, class) rows.
