@@ -157,6 +157,9 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     if repeated:
         # pandas renames the second of two equal names ("risk" -> "risk.1"): which one a flag
         # meant cannot be told, so neither is picked
+        if header is not None and numbers_only_header(names):
+            # a file without a header line: its first row of numbers was read as the names
+            raise DataError(f"{path}: {_NO_HEADER}")
         raise DataError(
             f"{path}: the header names the column(s) {', '.join(shown(c) for c in repeated)} "
             "more than once; rename them so that each column has its own name"
@@ -597,13 +600,42 @@ def _columns_listed(frame: Any) -> str:
     return ", ".join(names) + more
 
 
+#: a CSV file whose first line holds numbers only (session 28)
+_NO_HEADER = ("its first line holds numbers only, so the file has no header line (the first "
+              "row of data was read as the column names); add a first line naming the columns, "
+              "such as score,label, and give those names to the options")
+#: the name pandas gives an empty header cell
+_UNNAMED = re.compile(r"Unnamed: \d+")
+
+
+def numbers_only_header(names: Iterable[Any]) -> bool:
+    """Whether every name of a CSV header is a finite number (decimal commas allowed; empty
+    cells left aside): a file written without a header line."""
+    found = False
+    for name in names:
+        text = str(name).strip()
+        if not text or _UNNAMED.fullmatch(text):
+            continue
+        try:
+            value = float(text.replace(",", ".").replace("\u2212", "-"))
+        except ValueError:
+            return False
+        if not np.isfinite(value):
+            return False
+        found = True
+    return found
+
+
 def no_column(frame: Any, column: str, path: str | Path, flag: str) -> DataError:
     """The error for a column that is not in the file (naming a column whose name differs only
-    in surrounding spaces or in case, which is easy to miss in a spreadsheet)."""
+    in surrounding spaces or in case, which is easy to miss in a spreadsheet, and a CSV file
+    whose first line holds numbers only: a file without a header line)."""
     key = str(column).strip().casefold()
     near = [str(c) for c in frame.columns if str(c).strip().casefold() == key]
     hint = (f" (the column {shown(near[0])} differs only in spaces or case: give its exact name, "
             "in quotes)") if near else ""
+    if not near and "csv_read" in frame.attrs and numbers_only_header(frame.columns):
+        return DataError(f"{path}: no column {shown(column)} (given by {flag}); {_NO_HEADER}")
     return DataError(
         f"{path}: no column {shown(column)} (given by {flag}); the file has columns "
         f"{_columns_listed(frame)}{hint}"

@@ -1,0 +1,70 @@
+"""The command line as a new user meets it: the session-28 pass over ugly real-world files.
+
+Data: scikit-learn's breast cancer (a scaled logistic regression fitted on 280 rows, held-out
+probabilities of the other 289 written to CSV as spreadsheets and other tools write them).
+Every test here failed on the code before this session (see docs/command_line.md,
+"Session-28 user pass").
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+from sklearn.datasets import load_breast_cancer
+from sklearn.linear_model import LogisticRegression
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+
+from probwrap.cli import main
+
+
+@pytest.fixture(autouse=True)
+def _no_progress_lines(monkeypatch):
+    import probwrap.cli._progress as progress
+
+    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+
+
+@pytest.fixture(scope="module")
+def cancer():
+    X, y = load_breast_cancer(return_X_y=True)
+    order = np.random.default_rng(0).permutation(y.size)
+    fit, held = order[:280], order[280:]
+    model = make_pipeline(StandardScaler(), LogisticRegression(C=0.1)).fit(X[fit], y[fit])
+    return pd.DataFrame({"id": np.arange(held.size), "score": np.round(
+        model.predict_proba(X[held])[:, 1], 6), "y": y[held]})
+
+
+def run(capsys, *argv):
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def _cutoff(capsys, path, *extra):
+    return run(capsys, "cutoff", "--scores", path, "--score-column", "score", "--label-column",
+               "y", "--cost-fp", 1, "--cost-fn", 5, "--resamples", 0, "--format", "json", *extra)
+
+
+@pytest.mark.parametrize("columns", [["id", "score", "y"], ["score", "y"]])
+def test_file_without_a_header_line_is_named_as_such(cancer, tmp_path, capsys, columns):
+    """A file written without its header: the first row became the names, and the message was
+    "the header names the column(s) '0' more than once" (id 0 and label 0) or "no column
+    'score'; the file has columns '0.0', '1'" - neither says that the header is missing."""
+    path = tmp_path / "no-header.csv"
+    cancer[columns].to_csv(path, index=False, header=False)
+    code, out, err = _cutoff(capsys, path)
+    assert code == 1 and out == ""
+    assert "no header line" in err and "first line holds numbers only" in err
+    assert "more than once" not in err
+    # a header of numbers that names the columns asked for is read as it is written
+    plain = tmp_path / "numbered.csv"
+    cancer.rename(columns={"score": "2", "y": "3"}).to_csv(plain, index=False)
+    code, out, err = run(capsys, "cutoff", "--scores", plain, "--score-column", "2",
+                         "--label-column", "3", "--cost-fp", 1, "--cost-fn", 5,
+                         "--resamples", 0, "--format", "json")
+    assert code == 0, err
+    assert json.loads(out)["n_rows"] == len(cancer)
