@@ -68,3 +68,20 @@ def test_file_without_a_header_line_is_named_as_such(cancer, tmp_path, capsys, c
                          "--resamples", 0, "--format", "json")
     assert code == 0, err
     assert json.loads(out)["n_rows"] == len(cancer)
+
+
+def test_a_rare_third_label_names_its_rows(cancer, tmp_path, capsys):
+    """'maybe' in 3 of 289 rows of a yes/no column: the message listed the three labels and no
+    row, so the rows had to be hunted for in the spreadsheet."""
+    frame = cancer.assign(y=np.where(cancer["y"] == 1, "yes", "no"))
+    frame.loc[[4, 50, 51], "y"] = "maybe"
+    path = tmp_path / "third.csv"
+    frame.to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path, "--positive-label", "yes")
+    assert code == 1
+    assert "'maybe' is found in only 3 of 289 rows: rows 6, 52 and 53" in err
+    # a column of many labels is no rare typo: no rows listed
+    frame = cancer.assign(y=cancer["y"] + cancer["id"] % 3)
+    frame.to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1 and "it holds 4" in err and "found in only" not in err

@@ -227,6 +227,10 @@ def _read_standard_input(name: Any, **options: Any) -> Any:
 #: probabilities is a typo, not a column written in percent
 PERCENT_SHARE = 0.01
 
+#: largest share of rows the labels beyond the two most common ones may hold for the message
+#: to name their rows (our rule; session 28): a rare third label is a typo or a code to fix
+RARE_LABEL_SHARE = 0.05
+
 #: the words pandas reads as a missing value by default (its documented ``na_values`` list)
 _MISSING_WORDS = frozenset({
     "", "#N/A", "#N/A N/A", "#NA", "-1.#IND", "-1.#QNAN", "-NaN", "-nan", "1.#IND", "1.#QNAN",
@@ -1051,6 +1055,21 @@ def read_labels(
             if _last_row_hint(values == values[-1]):
                 hint = (f"; {shown(values[-1])} is found only on the last row of the table: if "
                         "that row holds totals or notes, delete it (every row is read as data)")
+        if distinct.shape[0] > 2 and not hint:
+            # two common labels and a rare other one (a typo, a third outcome, a code for
+            # "unknown"): name its rows, so that one look at the file finds them
+            counts = np.array([np.count_nonzero(values == v) for v in distinct])
+            order = np.argsort(-counts, kind="stable")
+            rare = distinct[order[2:]]
+            flagged = np.isin(values, rare)
+            if flagged.sum() <= RARE_LABEL_SHARE * values.shape[0]:
+                hint = (f"; {', '.join(shown(v) for v in rare[:6])}{more if rare.shape[0] > 6 else ''} "
+                        f"{'is' if rare.shape[0] == 1 else 'are'} found in only "
+                        f"{int(flagged.sum())} of {values.shape[0]} rows: "
+                        f"{rows_text(path, np.flatnonzero(flagged))}; correct "
+                        f"{'that row, or remove it' if flagged.sum() == 1 else 'those rows, or remove them'}"
+                        " if their outcome is neither of the two "
+                        f"({shown(distinct[order[0]])} and {shown(distinct[order[1]])})")
         if distinct.shape[0] == 1:  # "it holds 1: 1" read as a riddle
             raise DataError(
                 f"{path}: column {shown(column)} ({flag}) must hold exactly two labels (binary "
