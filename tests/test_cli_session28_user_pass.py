@@ -85,3 +85,34 @@ def test_a_rare_third_label_names_its_rows(cancer, tmp_path, capsys):
     frame.to_csv(path, index=False)
     code, _, err = _cutoff(capsys, path)
     assert code == 1 and "it holds 4" in err and "found in only" not in err
+
+
+@pytest.mark.parametrize(("sep", "decimal"), [(";", ","), (";", "."), ("\t", ".")])
+def test_a_comma_in_a_column_name_keeps_the_separator(cancer, tmp_path, capsys, sep, decimal):
+    """A ';' export from a German spreadsheet naming its column "Risiko, kalibriert" was read
+    as comma-separated (the header holds a comma): "line 2 has 3 fields but the header has 2"
+    or "no column 'Risiko, kalibriert'; the file has columns 'id;Risiko', ' kalibriert;y'"."""
+    plain = tmp_path / "plain.csv"
+    cancer.to_csv(plain, index=False)
+    code, out, err = _cutoff(capsys, plain)
+    assert code == 0, err
+    expected = json.loads(out)
+    path = tmp_path / "export.csv"
+    cancer.rename(columns={"score": "Risiko, kalibriert"}).to_csv(path, sep=sep,
+                                                                  decimal=decimal, index=False)
+    code, out, err = run(capsys, "cutoff", "--scores", path, "--score-column",
+                         "Risiko, kalibriert", "--label-column", "y", "--cost-fp", 1,
+                         "--cost-fn", 5, "--resamples", 0, "--format", "json")
+    assert code == 0, err
+    got = json.loads(out)
+    assert got["n_rows"] == expected["n_rows"]
+    assert got["cutoff"] == expected["cutoff"]
+    assert got["expected_cost"] == expected["expected_cost"]
+    # a comma-separated file whose names hold a ';' stays comma-separated
+    path = tmp_path / "commas.csv"
+    cancer.rename(columns={"score": "score;v2"}).to_csv(path, index=False)
+    code, out, err = run(capsys, "cutoff", "--scores", path, "--score-column", "score;v2",
+                         "--label-column", "y", "--cost-fp", 1, "--cost-fn", 5,
+                         "--resamples", 0, "--format", "json")
+    assert code == 0, err
+    assert json.loads(out)["cutoff"] == expected["cutoff"]

@@ -555,12 +555,46 @@ def _records(handle: Any, sep: str) -> Any:
         yield row
 
 
+#: data lines read to tell the separator of a header holding a comma and another separator
+_SEP_LOOK_LINES = 50
+
+
+def _comma_in_a_name(path: Path, encoding: str, header: str) -> str:
+    """The separator of a file whose header holds a comma: ``,``, unless the header holds a tab,
+    ``;`` or ``|`` too and that separator splits the header and the next
+    :data:`_SEP_LOOK_LINES` lines into the same number of fields (two or more; the most fields
+    wins, then the order ``,``, tab, ``;``, ``|``). A column name with a comma in a ``;`` file
+    (German spreadsheets' "Risiko, kalibriert") made the file read as comma-separated."""
+    others = [c for c in ("\t", ";", "|") if c in header]
+    if not others:
+        return ","
+    best, best_fields = ",", 0
+    for sep in (",", *others):
+        try:
+            with _open_text(path, encoding, errors="replace") as handle:
+                counts = []
+                for row in _records(handle, sep):
+                    if not any(field.strip() for field in row):
+                        continue  # blank lines and lines of bare separators
+                    counts.append(len(row))
+                    if len(counts) > _SEP_LOOK_LINES:
+                        break
+        except _UNREADABLE:
+            return ","
+        if len(counts) >= 2 and counts[0] >= 2 and len(set(counts)) == 1 \
+                and counts[0] > best_fields:
+            best, best_fields = sep, counts[0]
+    return best
+
+
 def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
     """Separator and decimal mark of a CSV file.
 
     Comma-separated unless the header has no comma but a semicolon or a tab (spreadsheets in
     many European locales write ``;`` with decimal commas) or, with none of these, a ``|``
-    (database exports), or as a first ``sep=X`` line says.
+    (database exports), or as a first ``sep=X`` line says; a header with a comma and another
+    separator is read with the one that splits it and the lines after it alike
+    (:func:`_comma_in_a_name`).
     With ``;`` or a tab the decimal mark is a comma when any field of the file is a number written with one (``0,42``, ``4,757E-02``):
     the whole file is looked at, since a sorted file may start with many rows of whole numbers.
     """
@@ -576,7 +610,11 @@ def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
                 while header and not header.strip():
                     header = handle.readline()
                 if "," in header:
-                    return ",", "."
+                    sep = _comma_in_a_name(path, encoding, header)
+                    if sep == ",":
+                        return ",", "."
+                    if sep == "|":
+                        return "|", "."
                 if "\t" in header:
                     sep = "\t"
                 elif ";" in header:
