@@ -116,3 +116,27 @@ def test_a_comma_in_a_column_name_keeps_the_separator(cancer, tmp_path, capsys, 
                          "--resamples", 0, "--format", "json")
     assert code == 0, err
     assert json.loads(out)["cutoff"] == expected["cutoff"]
+
+
+def test_a_row_spilling_into_an_unnamed_last_column_is_refused(cancer, tmp_path, capsys):
+    """A separator at the end of every line (header 'id,score,y,w,') and counts written with a
+    thousands separator in some rows: '3,1,412,' read as w = 1 with '412' in the unnamed last
+    column, without a word (weight sum 764,399 where the counts sum to 838,568)."""
+    counts = np.random.default_rng(0).integers(500, 5000, len(cancer))
+    lines = ["id,score,y,w,"]
+    for i, (score, y, w) in enumerate(zip(cancer["score"], cancer["y"], counts, strict=True)):
+        lines.append(f"{i},{score},{y},{w:,}" if i % 10 == 3 else f"{i},{score},{y},{w},")
+    path = tmp_path / "counts.csv"
+    path.write_text("\n".join(lines) + "\n")
+    code, out, err = _cutoff(capsys, path, "--weight-column", "w")
+    assert code == 1 and out == ""
+    spilled = [i for i in range(len(cancer)) if i % 10 == 3 and counts[i] >= 1000]
+    assert f"{len(spilled)} of {len(cancer)} rows have a value beyond the last named column" in err
+    assert f"rows {spilled[0] + 2}, " in err and "thousands separator" in err
+    # the same file with every count written plainly reads as the counts
+    path.write_text("\n".join(["id,score,y,w,"] + [
+        f"{i},{s},{y},{w}," for i, (s, y, w) in enumerate(zip(
+            cancer["score"], cancer["y"], counts, strict=True))]) + "\n")
+    code, out, err = _cutoff(capsys, path, "--weight-column", "w")
+    assert code == 0, err
+    assert json.loads(out)["weights"]["sum"] == int(counts.sum())

@@ -141,6 +141,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
             # rows named in messages as a spreadsheet numbers them (blank lines that were
             # skipped counted; a one-column file's blank lines are rows already)
             set_row_numbers(path, _spreadsheet_rows(path, encoding, sep, frame.shape[0]))
+            if header is not None:
+                _check_unnamed_tail(frame, header, path, sep)
     except DataError:
         raise
     except pd.errors.EmptyDataError:
@@ -375,6 +377,54 @@ def _check_field_counts(path: Path, sep: str, encoding: str) -> None:
         f"{path}: line {line} has {fields} fields but the header has {header}, so "
         f"the columns cannot be told apart{hint}"
     )
+
+
+def _check_unnamed_tail(frame: Any, header: list[str], path: Path, sep: str) -> None:
+    """A DataError when a field under the empty names at the end of the header (a separator
+    at the end of each line) holds a value.
+
+    Such a value is a row pushed one field to the right: in a comma-separated file ``1,234``
+    (a thousands separator) or ``0,42`` (a decimal comma) makes two fields, and with the empty
+    last column to take the spill the row had as many fields as the header, so it was read
+    without a word with ``1`` as its last named field (session 28).
+    """
+    tail = len(header)
+    while tail and not header[tail - 1].strip():
+        tail -= 1
+    if tail == len(header) or tail == 0 or frame.shape[1] != len(header):
+        return
+    filled = np.zeros(frame.shape[0], dtype=bool)
+    for j in range(tail, len(header)):
+        values = frame.iloc[:, j]
+        filled |= (values.notna() & (values.astype(str).str.strip() != "")).to_numpy()
+    if not filled.any():
+        return
+    row = int(np.flatnonzero(filled)[0])
+    spilled = [frame.iloc[row, j] for j in range(tail, len(header))
+               if str(frame.iloc[row, j]).strip() and not _is_nan(frame.iloc[row, j])]
+    hint = (" (in a comma-separated file a number written with a thousands separator, 1,234, "
+            "or a decimal comma, 0,42, makes two fields and pushes the fields after it one "
+            "column to the right: write numbers without separators, with a decimal point, or "
+            "quote them)") if sep == "," else ""
+    count = int(filled.sum())
+    raise DataError(
+        f"{path}: {count} of {frame.shape[0]} row{'s' if frame.shape[0] != 1 else ''} "
+        f"{'has' if count == 1 else 'have'} a value beyond the last named column, where the "
+        f"header ends with an empty name: {rows_text(path, np.flatnonzero(filled))}, the "
+        f"first holding {shown(_plain_float(spilled[0]))} there; their fields are most likely "
+        f"shifted{hint}; "
+        "if that column holds data, give it a name in the header")
+
+
+def _is_nan(value: Any) -> bool:
+    return isinstance(value, float) and value != value
+
+
+def _plain_float(value: Any) -> Any:
+    """412.0 read by pandas from a field written 412, shown as written."""
+    if isinstance(value, float | np.floating) and float(value).is_integer():
+        return int(value)
+    return value
 
 
 #: lines after the first data line looked at to tell a title line above the header
