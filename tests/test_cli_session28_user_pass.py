@@ -140,3 +140,15 @@ def test_a_row_spilling_into_an_unnamed_last_column_is_refused(cancer, tmp_path,
     code, out, err = _cutoff(capsys, path, "--weight-column", "w")
     assert code == 0, err
     assert json.loads(out)["weights"]["sum"] == int(counts.sum())
+
+
+def test_a_header_repeated_below_names_the_joined_files(cancer, tmp_path, capsys):
+    """Two exports joined with their headers ('cat a.csv b.csv'): "'score' is not a finite
+    number" for the row of the second header, with nothing saying what that row is."""
+    path = tmp_path / "joined.csv"
+    path.write_text(cancer.iloc[:100].to_csv(index=False) + cancer.iloc[100:].to_csv(index=False))
+    code, out, err = _cutoff(capsys, path)
+    assert code == 1 and out == ""
+    assert "row 102 (counting the header as row 1): 'score' is not a finite number" in err
+    assert "1 of 290 rows repeats the header line: row 102" in err
+    assert "delete those lines" in err

@@ -808,7 +808,8 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
                 if pd.isna(raw_value) else
                 f"{shown(raw_value)} is not a finite number"
                 f"{hint or _number_hint(raw_value, flag)}"
-                f"{_marker_hint(series, raw_value, path)}")
+                f"{_marker_hint(series, raw_value, path)}"
+                f"{_header_again_hint(frame, series, raw_value, path)}")
         raise DataError(f"{_row(path, column, row)}: {what}{_last_row_hint(bad)}")
     if grouped:
         _warn_grouped(path, column, flag, *grouped, values[grouped[1]])
@@ -1012,6 +1013,27 @@ def _marker_hint(series: Any, value: Any, path: str | Path) -> str:
     return (f"; {rows.shape[0]} of {series.shape[0]} rows hold {shown(text)}: "
             f"{rows_text(path, rows)}; if it marks a missing value, fill those rows in or "
             "remove them (an empty field or NA is read as missing)")
+
+
+def _header_again_hint(frame: Any, series: Any, value: Any, path: str | Path) -> str:
+    """After "'score' is not a finite number": the header line written again below the first
+    (files joined with their headers, as ``cat`` or a copy-paste of two exports does), with how
+    many rows repeat it and which (session 28); "" for other values."""
+    if str(value).strip() != str(series.name).strip():
+        return ""
+    names = [str(c).strip() for c in frame.columns]
+    text = frame.astype(str).apply(lambda column: column.str.strip())
+    again = (text == names).all(axis=1).to_numpy() if names else np.zeros(0, bool)
+    if not again.any():
+        again = series.astype(str).str.strip().to_numpy() == str(value).strip()
+        what = ("holds", "hold", "the column's name")
+    else:
+        what = ("repeats", "repeat", "the header line")
+    rows = np.flatnonzero(again)
+    verb = what[0] if rows.shape[0] == 1 else what[1]
+    return (f"; {rows.shape[0]} of {series.shape[0]} rows {verb} {what[2]}: "
+            f"{rows_text(path, rows)}; "
+            "files joined with their headers repeat it: delete those lines")
 
 
 def _number_hint(value: Any, flag: str = "--score-column") -> str:
