@@ -152,3 +152,27 @@ def test_a_header_repeated_below_names_the_joined_files(cancer, tmp_path, capsys
     assert "row 102 (counting the header as row 1): 'score' is not a finite number" in err
     assert "1 of 290 rows repeats the header line: row 102" in err
     assert "delete those lines" in err
+
+
+@pytest.mark.parametrize("quoted", [False, True])
+def test_one_column_of_decimal_commas_is_read(cancer, tmp_path, capsys, quoted):
+    """A column of scores saved alone by a spreadsheet in a decimal-comma locale ('score' and
+    then 0,113899 ...: no separator anywhere to tell the file's form) was refused: "line 2 has
+    2 fields but the header has 1", or, quoted, "'0,113899' is not a finite number"."""
+    plain = tmp_path / "plain.csv"
+    cancer[["score"]].to_csv(plain, index=False)
+    path = tmp_path / "scores.csv"
+    body = [str(v).replace(".", ",") for v in cancer["score"]]
+    path.write_text("score\r\n" + "".join(
+        (f'"{v}"' if quoted else v) + "\r\n" for v in body))
+
+    def estimate(file):
+        code, out, err = run(capsys, "prevalence", "--unlabelled", file, "--score-column",
+                             "score", "--source-prevalence", 0.6, "--resamples", 0,
+                             "--format", "json")
+        assert code == 0, err
+        return json.loads(out)
+
+    expected, got = estimate(plain), estimate(path)
+    assert got["n_rows"] == expected["n_rows"] == len(cancer)
+    assert got["prevalence"] == expected["prevalence"]

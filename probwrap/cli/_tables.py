@@ -605,6 +605,31 @@ def _records(handle: Any, sep: str) -> Any:
         yield row
 
 
+#: a line of a one-column file holding a number written with a decimal comma (0,42, "0,42",
+#: 4,757E-02), and a line holding a comma in any other form
+_ONE_COLUMN_COMMA = re.compile(r'[ \t]*"?[ \t]*[-+]?\d+,\d+(?:[eE][-+]?\d+)?[ \t]*"?[ \t]*')
+
+
+def _one_column_decimal_commas(handle: Any) -> bool:
+    """Whether the rest of an open CSV file (after a header without a separator) is one column
+    of numbers written with decimal commas: every line holding a comma is such a number, and
+    at least one line holds one. Before session 28 such a file (scores for ``prevalence``
+    saved from a German spreadsheet) was refused as "line 2 has 2 fields but the header has
+    1", or, quoted, as "'0,42' is not a finite number"."""
+    found = False
+    while True:
+        chunk = handle.read(_SCAN_CHUNK)
+        if not chunk:
+            return found
+        chunk += handle.readline()
+        for line in chunk.splitlines():
+            if "," not in line:
+                continue
+            if not _ONE_COLUMN_COMMA.fullmatch(line):
+                return False
+            found = True
+
+
 #: data lines read to tell the separator of a header holding a comma and another separator
 _SEP_LOOK_LINES = 50
 
@@ -674,7 +699,9 @@ def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
                     # named 'score|y|w' before); no decimal commas are looked for there
                     return "|", "."
                 else:
-                    return ",", "."
+                    # one column: a spreadsheet in a decimal-comma locale writes 0,42 with no
+                    # separator to tell (session 28)
+                    return (";", ",") if _one_column_decimal_commas(handle) else (",", ".")
             while True:
                 chunk = handle.read(_SCAN_CHUNK)
                 if not chunk:
