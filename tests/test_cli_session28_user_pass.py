@@ -176,3 +176,23 @@ def test_one_column_of_decimal_commas_is_read(cancer, tmp_path, capsys, quoted):
     expected, got = estimate(plain), estimate(path)
     assert got["n_rows"] == expected["n_rows"] == len(cancer)
     assert got["prevalence"] == expected["prevalence"]
+
+
+@pytest.mark.parametrize(("sep", "decimal"), [(",", "."), (";", ",")])
+def test_a_typeset_minus_sign_is_read(cancer, tmp_path, capsys, sep, decimal):
+    """Log-odds copied from formatted output or a word processor write '−2.05' with the minus
+    sign U+2212: "'−2.05' is not a finite number"; now read as the hyphen-minus file is."""
+    score = cancer["score"].clip(1e-6, 1 - 1e-6)
+    logit = np.log(score / (1 - score)).round(4)
+    results = []
+    for minus in ("-", "\u2212"):
+        frame = cancer.assign(score=[f"{v:.4f}".replace(".", decimal).replace("-", minus)
+                                     for v in logit])
+        path = tmp_path / f"logit{len(results)}.csv"
+        frame.to_csv(path, sep=sep, index=False, encoding="utf-8")
+        code, out, err = _cutoff(capsys, path, "--scale", "log-odds")
+        assert code == 0, err
+        results.append(json.loads(out))
+    assert (logit < 0).sum() > 50
+    assert results[1]["cutoff"] == results[0]["cutoff"]
+    assert results[1]["expected_cost"] == results[0]["expected_cost"]

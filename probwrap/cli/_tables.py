@@ -568,12 +568,12 @@ def _csv_header(path: Path, encoding: str, sep: str) -> list[str] | None:
 #: (optionally in double quotes), between semicolons (tabs) or at the start or end of a line
 _DECIMAL_COMMA = {
     ";": re.compile(
-        r'(?:^|;)[ \t]*"?[ \t]*[-+]?\d+,\d+(?:[eE][-+]?\d+)?[ \t]*"?[ \t]*(?=;|\r?$)',
+        r'(?:^|;)[ \t]*"?[ \t]*[-+\u2212]?\d+,\d+(?:[eE][-+]?\d+)?[ \t]*"?[ \t]*(?=;|\r?$)',
         re.MULTILINE),
     # a tab-separated file: spreadsheets' "text (tab-delimited)" export writes the locale's
     # decimal comma as the ';' export does (it was refused as "not a finite number")
     "\t": re.compile(
-        r'(?:^|\t)[ ]*"?[ ]*[-+]?\d+,\d+(?:[eE][-+]?\d+)?[ ]*"?[ ]*(?=\t|\r?$)',
+        r'(?:^|\t)[ ]*"?[ ]*[-+\u2212]?\d+,\d+(?:[eE][-+]?\d+)?[ ]*"?[ ]*(?=\t|\r?$)',
         re.MULTILINE),
 }
 #: characters read at a time when looking for decimal commas
@@ -607,7 +607,7 @@ def _records(handle: Any, sep: str) -> Any:
 
 #: a line of a one-column file holding a number written with a decimal comma (0,42, "0,42",
 #: 4,757E-02), and a line holding a comma in any other form
-_ONE_COLUMN_COMMA = re.compile(r'[ \t]*"?[ \t]*[-+]?\d+,\d+(?:[eE][-+]?\d+)?[ \t]*"?[ \t]*')
+_ONE_COLUMN_COMMA = re.compile(r'[ \t]*"?[ \t]*[-+\u2212]?\d+,\d+(?:[eE][-+]?\d+)?[ \t]*"?[ \t]*')
 
 
 def _one_column_decimal_commas(handle: Any) -> bool:
@@ -853,6 +853,11 @@ _DOT_GROUPS = re.compile(r"[-+]?[1-9]\d{0,2}(?:\.\d{3})+")
 _COMMA_GROUPS_DOT = re.compile(r"[-+]?[1-9]\d{0,2}(?:,\d{3})+\.\d+")
 
 
+#: the minus sign of typeset text (U+2212), which word processors, some statistics tools
+#: formatted output and text copied from web pages write for negative numbers (session 28)
+_MINUS_SIGN = "\u2212"
+
+
 def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
                        column: str, *, dots: str | None = None,
                        flag: str | None = None) -> tuple[np.ndarray, int, int]:
@@ -864,7 +869,8 @@ def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
     written with a point) is refused, naming the row. With ``"."`` a field with commas between
     groups of three digits and a decimal point (``3,703.50``) loses its commas. In both, spaces
     between groups of three digits (``1 234,5``; French spreadsheets write a no-break space)
-    are dropped, since a space is never a decimal mark. Any other field is left as written for
+    are dropped, since a space is never a decimal mark. The minus sign U+2212 (``−2.05``)
+    becomes a hyphen-minus. Any other field is left as written for
     the number parser to judge (and a message to show as written). Returns the fields, how many
     lost separators, and the first such row.
 
@@ -879,6 +885,8 @@ def _plain_number_text(raw: np.ndarray, decimal: str, path: str | Path,
     for i, value in enumerate(raw):
         if not isinstance(value, str):
             continue
+        if _MINUS_SIGN in value:  # "−2,05": a minus sign, as typeset text writes it
+            value = out[i] = value.replace(_MINUS_SIGN, "-")
         spaced = any(space in value for space in _GROUP_SPACES)
         if mark not in value and not spaced:
             if decimal == "," and "," in value:
