@@ -196,3 +196,31 @@ def test_a_typeset_minus_sign_is_read(cancer, tmp_path, capsys, sep, decimal):
     assert (logit < 0).sum() > 50
     assert results[1]["cutoff"] == results[0]["cutoff"]
     assert results[1]["expected_cost"] == results[0]["expected_cost"]
+
+
+def test_a_zip_from_macos_finder_is_read(cancer, tmp_path, capsys):
+    """macOS Finder's Compress puts '__MACOSX/._scores.csv' (and at times '.DS_Store') beside
+    the file: "a .zip file must hold exactly one file (it holds 2)"."""
+    import zipfile
+
+    plain = tmp_path / "plain.csv"
+    cancer.to_csv(plain, index=False)
+    code, out, err = _cutoff(capsys, plain)
+    assert code == 0, err
+    expected = json.loads(out)
+    path = tmp_path / "scores.zip"
+    with zipfile.ZipFile(path, "w") as archive:
+        archive.writestr("scores/", b"")
+        archive.writestr("scores/scores.csv", plain.read_bytes())
+        archive.writestr("__MACOSX/scores/._scores.csv", b"\x00\x05\x16\x07\x00\x02\x00\x00")
+        archive.writestr("scores/.DS_Store", b"\x00\x00\x00\x01Bud1")
+    code, out, err = _cutoff(capsys, path)
+    assert code == 0, err
+    got = json.loads(out)
+    assert (got["n_rows"], got["cutoff"]) == (expected["n_rows"], expected["cutoff"])
+    # two tables: refused, naming them
+    with zipfile.ZipFile(path, "w") as archive:
+        archive.writestr("a.csv", plain.read_bytes())
+        archive.writestr("b.csv", plain.read_bytes())
+    code, out, err = _cutoff(capsys, path)
+    assert code == 1 and "must hold exactly one file (it holds 2: 'a.csv', 'b.csv')" in err

@@ -259,6 +259,11 @@ def _read_csv(pd: Any, path: Path, **options: Any) -> Any:
         with warnings.catch_warnings():
             warnings.filterwarnings("error", message="Length of header",
                                     category=pd.errors.ParserWarning)
+            if path.suffix.lower() == ".zip":
+                # pandas refuses an archive with macOS Finder's extra members: the one table
+                # inside is opened here (_open_bytes) and read from its stream
+                with _open_bytes(path) as handle:
+                    return pd.read_csv(handle, index_col=False, **options)
             return pd.read_csv(path, index_col=False, **options)
     except (pd.errors.ParserWarning, pd.errors.ParserError):
         _check_field_counts(path, options.get("sep", ","), options.get("encoding", "utf-8-sig"))
@@ -448,6 +453,15 @@ _UNREADABLE = (OSError, EOFError, ValueError, UnicodeError, csv.Error, zipfile.B
 _COMPRESSED = {".gz": "gzip", ".bz2": "bz2", ".xz": "lzma", ".zip": "zip"}
 
 
+def _zip_extra(name: str) -> bool:
+    """Whether a member of a .zip file is no table: a folder, or what macOS Finder's Compress
+    adds beside the file (``__MACOSX/._scores.csv``, ``.DS_Store``; session 28: such an
+    archive of one CSV file was refused as holding 2 files)."""
+    base = name.rstrip("/").rsplit("/", 1)[-1]
+    return (name.endswith("/") or name.startswith("__MACOSX/") or base == ".DS_Store"
+            or base.startswith("._"))
+
+
 def _open_bytes(path: Path) -> Any:
     """The file opened for reading bytes, decompressed when its extension says it is
     compressed (``.gz``, ``.bz2``, ``.xz``, ``.zip`` holding one file), as pandas reads it: the
@@ -458,11 +472,12 @@ def _open_bytes(path: Path) -> Any:
         return open(path, "rb")
     if kind == "zip":
         archive = zipfile.ZipFile(path)
-        names = [n for n in archive.namelist() if not n.endswith("/")]
+        names = [n for n in archive.namelist() if not _zip_extra(n)]
         if len(names) != 1:
             archive.close()
+            listed = ", ".join(shown(n) for n in names[:5]) + (", ..." if len(names) > 5 else "")
             raise DataError(f"{path}: a .zip file must hold exactly one file (it holds "
-                            f"{len(names)})")
+                            f"{len(names)}{': ' + listed if names else ''})")
         return archive.open(names[0])
     import importlib
 
