@@ -114,7 +114,7 @@ def test_zip_with_two_files_is_refused(scored, capsys):
         archive.writestr("b.csv", frame.to_csv(index=False))
     code, _, err = _cutoff(capsys, path)
     assert code == 1
-    assert "two.zip: a .zip file must hold exactly one file (it holds 2)" in err
+    assert "two.zip: a .zip file must hold exactly one file (it holds 2: " in err
 
 
 def test_percentages_are_named_as_percentages(scored, capsys):
