@@ -224,3 +224,16 @@ def test_a_zip_from_macos_finder_is_read(cancer, tmp_path, capsys):
         archive.writestr("b.csv", plain.read_bytes())
     code, out, err = _cutoff(capsys, path)
     assert code == 1 and "must hold exactly one file (it holds 2: 'a.csv', 'b.csv')" in err
+
+
+def test_labels_spelled_two_ways_name_the_rare_spelling_rows(cancer, tmp_path, capsys):
+    """'benign' in 2 rows of a 'Benign'/'Malignant' column: the message said that some labels
+    differ only in case, without a row to find them by."""
+    frame = cancer.assign(y=np.where(cancer["y"] == 1, "Benign", "Malignant"))
+    frame.loc[[3, 7], "y"] = "benign"
+    path = tmp_path / "mixed-case.csv"
+    frame.to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path, "--positive-label", "Benign")
+    assert code == 1
+    assert "differ only in spaces around them or in case" in err
+    assert "('benign' in 2 of 289 rows: rows 5 and 9" in err

@@ -1203,6 +1203,14 @@ def read_labels(
         hint = ("; some differ only in spaces around them or in case, and are read as "
                 "different labels: write each label one way") if (
             distinct.shape[0] > 2 and len(tidy) < distinct.shape[0]) else ""
+        if hint and len(tidy) == 2:
+            # 'benign' in 2 rows of 'Benign'/'Malignant': which rows (session 28)
+            counts = np.array([np.count_nonzero(values == v) for v in distinct])
+            order = np.argsort(-counts, kind="stable")
+            rare = distinct[order[2:]]
+            flagged = np.isin(values, rare)
+            hint += (f" ({', '.join(shown(v) for v in rare[:6])} in {int(flagged.sum())} of "
+                     f"{values.shape[0]} rows: {rows_text(path, np.flatnonzero(flagged))})")
         marks = [v for v in distinct if str(v).strip() in MISSING_MARKS]
         if distinct.shape[0] > 2 and marks and not hint:
             # "?" for an unknown outcome (UCI files): read as a third label, with no row named
