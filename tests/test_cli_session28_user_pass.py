@@ -237,3 +237,31 @@ def test_labels_spelled_two_ways_name_the_rare_spelling_rows(cancer, tmp_path, c
     assert code == 1
     assert "differ only in spaces around them or in case" in err
     assert "('benign' in 2 of 289 rows: rows 5 and 9" in err
+
+
+def test_a_field_of_spaces_is_a_missing_value(cancer, tmp_path, capsys):
+    """A score cell holding a typed space: "' ' is not a finite number", and `calibrate apply`
+    stopped where an empty field comes through with an empty calibrated probability."""
+    plain = tmp_path / "plain.csv"
+    cancer.to_csv(plain, index=False)
+    code, _, err = run(capsys, "calibrate", "fit", "--scores", plain, "--score-column",
+                       "score", "--label-column", "y", "--method", "platt", "--out",
+                       tmp_path / "map.json")
+    assert code == 0, err
+    frame = cancer.astype({"score": object})
+    frame.loc[3, "score"] = " "
+    frame.loc[9, "score"] = "\t "
+    path = tmp_path / "spaces.csv"
+    frame.to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "row 5 (counting the header as row 1): the value is missing" in err
+    assert "2 of 289 rows have no value" in err or "rows 5 and 11" in err
+    out_path = tmp_path / "out.csv"
+    code, _, err = run(capsys, "calibrate", "apply", "--map", tmp_path / "map.json", "--scores",
+                       path, "--score-column", "score", "--out", out_path)
+    assert code == 0, err
+    assert "2 of 289 rows have no score in column 'score': rows 5 and 11" in err
+    written = pd.read_csv(out_path)
+    assert written["calibrated_probability"].isna().sum() == 2
+    assert written["calibrated_probability"].notna().sum() == 287

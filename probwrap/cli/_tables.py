@@ -799,6 +799,12 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
     if column not in frame.columns:
         raise no_column(frame, column, path, flag)
     series = frame[column]
+    if series.dtype == object:
+        # a field of spaces only (a cell holding a typed space) is as empty as an empty
+        # field: missing, not "' ' is not a finite number" (session 28)
+        spaces = series.map(lambda v: isinstance(v, str) and v != "" and not v.strip())
+        if spaces.any():
+            series = series.mask(spaces.astype(bool))
     grouped = None
     if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(
         series.dtype
