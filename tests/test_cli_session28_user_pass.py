@@ -265,3 +265,24 @@ def test_a_field_of_spaces_is_a_missing_value(cancer, tmp_path, capsys):
     written = pd.read_csv(out_path)
     assert written["calibrated_probability"].isna().sum() == 2
     assert written["calibrated_probability"].notna().sum() == 287
+
+
+def test_parquet_with_number_column_names_is_read(cancer, tmp_path, capsys):
+    """`pd.DataFrame(model.predict_proba(X)).to_parquet(...)` keeps the names 0 and 1 as
+    numbers: "no column '1' (given by --score-column); the file has columns '0', '1' (the
+    column '1' differs only in spaces or case ...)"."""
+    proba = np.column_stack([1 - cancer["score"], cancer["score"]])
+    path = tmp_path / "proba.parquet"
+    pd.DataFrame(proba).to_parquet(path)
+    assert pd.read_parquet(path).columns.tolist() == [0, 1]
+    plain = tmp_path / "plain.csv"
+    cancer[["score"]].to_csv(plain, index=False)
+    results = []
+    for file, column in ((plain, "score"), (path, "1")):
+        code, out, err = run(capsys, "prevalence", "--unlabelled", file, "--score-column",
+                             column, "--source-prevalence", 0.6, "--resamples", 0,
+                             "--format", "json")
+        assert code == 0, err
+        results.append(json.loads(out))
+    assert results[1]["prevalence"] == results[0]["prevalence"]
+    assert results[1]["n_rows"] == len(cancer)

@@ -82,6 +82,11 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
             frame = pd.read_parquet(path)
             if as_text and not _plain_index(frame.index, pd):
                 frame = frame.reset_index()
+            if not all(isinstance(c, str) for c in frame.columns):
+                # names kept as numbers by pandas' metadata (a frame of predict_proba's
+                # columns 0 and 1): the options name columns by text (session 28: "no column
+                # '1' ...; the file has columns '0', '1'")
+                frame.columns = [str(c) for c in frame.columns]
         else:
             exact = list(exact)
             encoding = _csv_encoding(path)
