@@ -82,7 +82,9 @@ def read_scores(frame: Any, column: str, path: str | Path, *, scale: str,
     Log-odds that all lie in [0, 1] (at least 10 rows, not all equal) are most likely
     probabilities passed with ``--scale log-odds``: read as log-odds they are probabilities
     from 0.5 to 0.73 only, so with ``verb`` a warning line says so (real log-odds can lie
-    there, so it is not an error).
+    there, so it is not an error). Log-odds in [0, 100] above 1 and none negative (at least 10
+    rows) are most likely percentages: read as log-odds every row is at least even odds, and
+    a warning line says so.
     """
     if scale == "proba":
         return probability_column(frame, column, path, flag=flag, allow_missing=allow_missing)
@@ -100,6 +102,16 @@ def read_scores(frame: Any, column: str, path: str | Path, *, scale: str,
             f"{hi:.3g}), as probabilities do, but the scale is log-odds, which reads them as "
             f"probabilities from {1 / (1 + np.exp(-lo)):.3g} to {1 / (1 + np.exp(-hi)):.3g} "
             "only; if the column holds probabilities, use --scale proba"))
+    elif (verb is not None and given.shape[0] >= 10 and given.min() >= 0.0
+            and 1.0 < given.max() <= 100.0):
+        # percentages passed as log-odds (the percentages message names --scale log-odds for
+        # real log-odds): no value below 0 means every row at least even odds (session 28)
+        lo, hi = float(given.min()), float(given.max())
+        warn_line(verb, (
+            f"{path}: every value of column {plain(column)!r} lies in [0, 100] ({lo:.3g} to "
+            f"{hi:.3g}), none negative, as percentages do, but the scale is log-odds, which "
+            f"reads every row as a probability of at least {1 / (1 + np.exp(-lo)):.3g}; if "
+            "the column holds percentages, divide it by 100 and use --scale proba"))
     return values
 
 
