@@ -303,3 +303,13 @@ def test_percentages_given_as_log_odds_draw_a_warning(cancer, tmp_path, capsys):
     cancer.assign(score=np.log(score / (1 - score))).to_csv(path, index=False)
     code, _, err = _cutoff(capsys, path, "--scale", "log-odds")
     assert code == 0 and "percentages" not in err
+
+
+def test_two_whole_number_columns_under_one_name_stay_refused(tmp_path, capsys):
+    """'0,1' and '1,0' alone (a score and a label under a header naming one column) are not
+    read as decimal commas: refused, naming the line, as before."""
+    path = tmp_path / "pairs.csv"
+    path.write_text("score\n" + "0,1\n1,0\n" * 20)
+    code, _, err = run(capsys, "prevalence", "--unlabelled", path, "--score-column", "score",
+                       "--source-prevalence", 0.5, "--resamples", 0)
+    assert code == 1 and "line 2 has 2 fields but the header has 1" in err

@@ -627,13 +627,14 @@ def _records(handle: Any, sep: str) -> Any:
 
 #: a line of a one-column file holding a number written with a decimal comma (0,42, "0,42",
 #: 4,757E-02), and a line holding a comma in any other form
-_ONE_COLUMN_COMMA = re.compile(r'[ \t]*"?[ \t]*[-+\u2212]?\d+,\d+(?:[eE][-+]?\d+)?[ \t]*"?[ \t]*')
+_ONE_COLUMN_COMMA = re.compile(r'[ \t]*"?[ \t]*[-+\u2212]?\d+,(\d+)(?:[eE][-+]?\d+)?[ \t]*"?[ \t]*')
 
 
 def _one_column_decimal_commas(handle: Any) -> bool:
     """Whether the rest of an open CSV file (after a header without a separator) is one column
     of numbers written with decimal commas: every line holding a comma is such a number, and
-    at least one line holds one. Before session 28 such a file (scores for ``prevalence``
+    at least one has three decimals or more (``0,1`` and ``1,0`` alone may be two whole-number
+    columns under a header naming one, refused as before). Before session 28 such a file (scores for ``prevalence``
     saved from a German spreadsheet) was refused as "line 2 has 2 fields but the header has
     1", or, quoted, as "'0,42' is not a finite number"."""
     found = False
@@ -645,9 +646,12 @@ def _one_column_decimal_commas(handle: Any) -> bool:
         for line in chunk.splitlines():
             if "," not in line:
                 continue
-            if not _ONE_COLUMN_COMMA.fullmatch(line):
+            match = _ONE_COLUMN_COMMA.fullmatch(line)
+            if not match:
                 return False
-            found = True
+            # a decimal part of three digits or more somewhere: "0,1" / "1,0" alone may be
+            # two whole-number columns under a header naming one
+            found = found or len(match.group(1)) >= 3
 
 
 #: data lines read to tell the separator of a header holding a comma and another separator
