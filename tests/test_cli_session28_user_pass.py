@@ -313,3 +313,21 @@ def test_two_whole_number_columns_under_one_name_stay_refused(tmp_path, capsys):
     code, _, err = run(capsys, "prevalence", "--unlabelled", path, "--score-column", "score",
                        "--source-prevalence", 0.5, "--resamples", 0)
     assert code == 1 and "line 2 has 2 fields but the header has 1" in err
+
+
+def test_a_units_line_under_the_header_is_named(cancer, tmp_path, capsys):
+    """Exports that write a line of units under the header ('(probability)', '(0/1)'): the
+    message said only "'(probability)' is not a finite number" at row 2."""
+    path = tmp_path / "units.csv"
+    path.write_text("id,score,y\n,(probability),(0/1)\n" + cancer.to_csv(index=False,
+                                                                          header=False))
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1
+    assert "row 2 (counting the header as row 1): '(probability)' is not a finite number" in err
+    assert "a line of units or notes under the header, delete it" in err
+    # a bad value on the first row of an ordinary file is not called a units line
+    frame = cancer.astype({"score": object})
+    frame.loc[0, "score"] = "abc"
+    frame.to_csv(path, index=False)
+    code, _, err = _cutoff(capsys, path)
+    assert code == 1 and "'abc' is not a finite number" in err and "units or notes" not in err

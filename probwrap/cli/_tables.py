@@ -866,7 +866,8 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
                 f"{shown(raw_value)} is not a finite number"
                 f"{hint or _number_hint(raw_value, flag)}"
                 f"{_marker_hint(series, raw_value, path)}"
-                f"{_header_again_hint(frame, series, raw_value, path)}")
+                f"{_header_again_hint(frame, series, raw_value, path)}"
+                f"{_units_line_hint(frame, series, row, raw_value)}")
         raise DataError(f"{_row(path, column, row)}: {what}{_last_row_hint(bad)}")
     if grouped:
         _warn_grouped(path, column, flag, *grouped, values[grouped[1]])
@@ -1099,6 +1100,22 @@ def _header_again_hint(frame: Any, series: Any, value: Any, path: str | Path) ->
     return (f"; {rows.shape[0]} of {series.shape[0]} rows {verb} {what[2]}: "
             f"{rows_text(path, rows)}; "
             "files joined with their headers repeat it: delete those lines")
+
+
+def _units_line_hint(frame: Any, series: Any, row: int, value: Any) -> str:
+    """After "'(probability)' is not a finite number" on the first row: a line of units or
+    notes under the header (every field of it text, the rows after it numbers), which some
+    exports write (session 28); "" otherwise."""
+    if row != 0 or frame.shape[0] < 2 or str(value).strip() == str(series.name).strip():
+        return ""
+    fields = [v for v in frame.iloc[0].tolist()
+              if not _is_nan(v) and v is not None and str(v).strip()]
+    if len(fields) < 2 or any(_number(v) is not None for v in fields):
+        return ""
+    if _number(str(series.iloc[1]).replace(",", ".")) is None:
+        return ""
+    return ("; no field of that row is a number: if it is a line of units or notes under the "
+            "header, delete it (every row below the header is read as data)")
 
 
 def _number_hint(value: Any, flag: str = "--score-column") -> str:
