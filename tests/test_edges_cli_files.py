@@ -173,7 +173,7 @@ def test_class_columns_named_otherwise_than_the_labels(tmp_path, capsys, wine_pr
     ("risk,outcome\n0,42,yes\n0,17,no\n", 2),   # decimal commas: pandas took "0" as an index
     # one column, no separator in the header, a line that is no decimal-comma number (a
     # column of decimal commas alone is read as such since session 28:
-    # tests/test_cli_session28_user_pass.py)
+    # tests/test_cli_spreadsheet_exports.py)
     ("risk\n0,42\n0,17,3\n", 2),
     ("risk,outcome\n0.42,yes\n0.17,no\n0,05,no\n", 4),  # a later row only
 ])
