@@ -486,6 +486,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     # target_prior_interval_; see adapt)
     _keep_fold_models = True
 
+    @property
+    def _split_table_cases(self) -> bool:
+        """A count table's cases are split into folds when the base model is cross-fitted here
+        (session 28, as the calibration's since session 27): fold models fitted on the cases
+        left in their training part, held-out rows the (row, fold) runs of cases, which the
+        prior estimate then counts as cases. Not with ``cells`` (the cells' clustering counts
+        the units, and the folds keep a cell's rows together)."""
+        return not getattr(self, "_cells_given", False)
+
     def __init__(
         self,
         estimator: Any = None,
@@ -625,7 +634,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             Row weights; passed to the estimator where it accepts them, and used for
             ``source_prior_``, the calibration and the confusion matrix. As in ``adapt``, the
             shift test and the interval count Kish's effective number of labelled rows
-            (docs/evidence/prior_shift_log.md, "How sure is the estimate, and has anything moved?"). The
+            (docs/evidence/prior_shift_log.md, "How sure is the estimate, and has anything moved?"),
+            except for a count table (whole numbers without a common factor above 1, some above
+            1, at most 1e6 cases; docs/weights.md), which counts its cases, as the same cases
+            passed one row each: with a frozen model since session 27, and with a model
+            cross-fitted here since session 28, whose folds then split the table's cases as
+            they split the rows repeated ("Count tables with a refit model (session 28)"). The
             calibration inside reads them by the calibration maps' rule (docs/weights.md):
             row counts when they sum to at least the number of rows — whole-number weights
             then fit as the rows duplicated, and multiplying them by 1,000 means a thousand
@@ -699,10 +713,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 self._choose_output_map(est, sample_weight)
             self._source_tally = None
             return self._finish_fit(est)
+        self._cells_given = cells is not None  # (_split_table_cases)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
+        # a count table cross-fitted by its cases (session 28): the held-out rows are runs of
+        # its cases (row, fold), weighted by their length; the table's own weights are read
+        # for the weight warnings
+        table = getattr(ho, "table_row", None) is not None
         self._warn_few_class_rows(ho.class_row_counts(ho.sample_weight))
         if sample_weight is not None and not ho.from_tally:
-            self._warn_weight_reading(ho.sample_weight)
+            self._warn_weight_reading(ho.row_weight if table else ho.sample_weight)
         elif sample_weight is not None:
             # more than 20,000 Dask or Spark rows, read from the bins of their tally
             self._warn_tally_weight_reading(self.tally_, ho.sample_weight)
@@ -724,9 +743,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 ho.sample_weight, effective_rows=rows,
                 class_names=self.classes_, source_fold=ho.fold if refit else None,
                 cells=_count_cells(cells, ho),
-                _weight_owner=None)  # (said in this wrapper's words: _warn_weight_reading)
+                _weight_owner=None,  # (said in this wrapper's words: _warn_weight_reading)
+                _case_folds=table and refit)
         if est._src_cases is not None and ho.values.ndim == 2 and ho.values.shape[1] == 2:
-            # a two-class count table read as its cases (a frozen model, no `cells`): adapt's
+            # a two-class count table read as its cases (a frozen model or one cross-fitted
+            # by its cases, no `cells`): adapt's
             # interval and shift test count every case as independent, too sure where the
             # cases of a group share causes (star98's pupils of a district: 0.075 times the
             # districts' clustered width); the check of CalibrationWrapper(auto) and the
@@ -776,8 +797,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if ho.n_folds == 0:
             self.predicted_with_ = "frozen"
         elif self._refit_here:
-            self._choose_predicting_models(X, est)
-        self._labelled_repeats = self._repeat_counts(X, est, ho.n_folds)
+            self._choose_predicting_models(X, est, ho.row_weight if table else None)
+        self._labelled_repeats = self._repeat_counts(
+            X, est, ho.n_folds, _table_labels(ho) if table else None)
         self._refit_scored = None  # (the refit model's probabilities of X, read twice above)
         # the opt-in feature check: a bounded sample of the labelled rows' features
         keep_feature_rows(self, X, y, sample_weight)
@@ -850,7 +872,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             return None
         return _row_identity_codes(X)
 
-    def _repeat_counts(self, X: Any, est: PriorEstimator, n_folds: int) -> tuple | None:
+    def _repeat_counts(self, X: Any, est: PriorEstimator, n_folds: int,
+                       table_labels: np.ndarray | None = None) -> tuple | None:
         """How often pairs of labelled rows (by their classes) have identical posteriors from
         the model that scores the ``adapt`` rows
         (:func:`probwrap.shift._repeats.labelled_repeat_counts`): a frozen model's held-out
@@ -864,7 +887,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         counts and clumps with the rows' feature codes (:func:`_row_identity_codes`) as one
         more block are kept as ``_repeat_reference(by_rows=True)``: a model whose posteriors
         saturate at exactly 0 or 1, or a tree's leaves, give distinct rows identical posteriors
-        (since 5 December 2026; benchmarks/shift_real_hunt24.py)."""
+        (since 5 December 2026; benchmarks/shift_real_hunt24.py).
+
+        ``table_labels``: the class of every row of ``X``, for a count table cross-fitted by its
+        cases (its kept labelled rows are runs of cases, not ``X``'s rows): the refit model's
+        posteriors of the table's rows are counted, as a frozen model's of them are."""
         from .shift._repeats import labelled_clumps, labelled_repeat_counts
 
         src = est._source_rows()
@@ -877,11 +904,18 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             if not self._refit_here or _is_dask(X):
                 return None
             proba = self._refit_proba(X, X)
-            if proba.shape[0] != src[0].shape[0]:
+            if table_labels is not None and proba.shape[0] == table_labels.shape[0]:
+                # (rows of count 0, without a class here, left out)
+                kept = table_labels >= 0
+                proba, src = proba[kept], (None, table_labels[kept])
+            elif proba.shape[0] != src[0].shape[0]:
                 return None
         # (and how the identical rows clump: the chance spread of the count of ties)
         self._labelled_clumps = labelled_clumps(proba, src[1], k)
         row_codes = _row_identity_codes(X)
+        if row_codes is not None and table_labels is not None and n_folds:
+            row_codes = row_codes[table_labels >= 0] if (
+                row_codes.shape[0] == table_labels.shape[0]) else None
         if row_codes is not None and row_codes.shape[0] == proba.shape[0]:
             both = np.column_stack([
                 np.asarray(proba, dtype=float).reshape(proba.shape[0], -1), row_codes])
@@ -911,7 +945,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self._refit_scored = (rows if rows is X else None, proba, said or rounding)
         return proba
 
-    def _choose_predicting_models(self, X: Any, est: PriorEstimator) -> None:
+    def _choose_predicting_models(self, X: Any, est: PriorEstimator,
+                                  row_weight: np.ndarray | None = None) -> None:
         """After a cross-fit whose labelled rows are kept: which models' posteriors the
         calibration turns into ``predict_proba`` (``predict_with``; the rule of
         :class:`~probwrap.CalibrationWrapper`, on the spreads of the models' log-probabilities,
@@ -919,16 +954,21 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         calibrated posteriors of every fold model are averaged with the folds' shares of the
         labelled weight, the mix the shift test and the interval already compare, and
         ``adapt`` re-weights that same average (``PriorEstimator`` told so by
-        ``_fold_point``; its estimate reads the fold models' own posteriors either way)."""
+        ``_fold_point``; its estimate reads the fold models' own posteriors either way).
+
+        ``row_weight``: a count table cross-fitted by its cases (session 28): the spreads are
+        taken over ``X``'s rows weighted by their counts, as over the rows repeated."""
         from ._calibration_wrapper import _SPREAD_CHECK_MAX_ROWS
         from .calibration._logodds import clip_from_smallest, proba_to_log_proba
         from .shift._interval import fold_shares
 
-        n = est._src_fold.shape[0]
+        n = est._src_fold.shape[0] if row_weight is None else row_weight.shape[0]
         rows = X
+        cw = None if row_weight is None else np.round(np.asarray(row_weight, dtype=float))
         if n > _SPREAD_CHECK_MAX_ROWS:  # evenly spaced rows: the check's cost stays bounded
-            rows = _safe_indexing(indexable(X)[0], np.linspace(
-                0, n - 1, _SPREAD_CHECK_MAX_ROWS).astype(np.intp))
+            pick = np.linspace(0, n - 1, _SPREAD_CHECK_MAX_ROWS).astype(np.intp)
+            rows = _safe_indexing(indexable(X)[0], pick)
+            cw = None if cw is None else cw[pick]
         sets = [self._refit_proba(rows, X), *self._fold_proba(rows)]
         # the log-probabilities floored as CalibrationWrapper floors them (half the smallest
         # non-zero held-out probability, at least 1e-12), not at the calibration's row bound:
@@ -943,7 +983,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             z = z - z.mean(axis=1, keepdims=True)
             if i > 0:
                 fold_scores.append(z)
-            sd = float(np.sqrt(np.mean(z.var(axis=0))))
+            if cw is None:
+                sd = float(np.sqrt(np.mean(z.var(axis=0))))
+            else:  # (the rows as many times as their counts)
+                m = np.average(z, axis=0, weights=cw)
+                sd = float(np.sqrt(np.mean(np.average((z - m) ** 2, axis=0, weights=cw))))
             # a model that scores every row alike (up to rounding) has no spread
             spreads.append(sd if sd > 1e-9 * max(1.0, float(np.abs(z).max())) else 0.0)
         ratios, variation = spread_check(spreads)
@@ -952,7 +996,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         # of its own: "auto" keeps the refit there, as CalibrationWrapper does)
         complete = all(np.asarray(classes).shape[0] == self.classes_.shape[0]
                        for _, classes in self._fold_models)
-        self.fold_disagreement_ = fold_disagreement(fold_scores) if complete else 0.0
+        self.fold_disagreement_ = fold_disagreement(fold_scores, cw) if complete else 0.0
         if self.predict_with == "fold_models" or (
                 self.predict_with == "auto" and complete
                 and fold_models_predict(ratios, variation, self.fold_disagreement_)):
@@ -1874,6 +1918,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
 def _num_rows(X: Any) -> int:
     return int(X.shape[0]) if hasattr(X, "shape") else len(X)
+
+
+def _table_labels(ho: Any) -> np.ndarray:
+    """The class of every row of a count table cross-fitted by its cases, from its held-out
+    runs (``ho.table_row``, ``ho.y_index``); a row of count 0 has no run and gets -1."""
+    out = np.full(np.shape(ho.row_weight)[0], -1, dtype=int)
+    out[np.asarray(ho.table_row)] = np.asarray(ho.y_index, dtype=int)
+    return out
 
 
 def _count_cells(cells: Any, ho: Any) -> Any:

@@ -150,11 +150,19 @@ def test_scaled_or_normalised_table_keeps_the_rows_as_fold_units():
     np.testing.assert_allclose(out[0][1], out[1][1], atol=1e-9)
 
 
-def test_prior_shift_wrapper_keeps_one_heldout_row_per_row():
-    """PriorShiftWrapper reads its held-out rows beside ``X`` (fold models scoring the labelled
-    rows, the output map): it keeps the table's rows as the folds' units."""
+def test_prior_shift_wrapper_splits_cases_unless_cells():
+    """PriorShiftWrapper splits a count table's cases among the folds too (since session 28;
+    until then it kept the table's rows as the folds' units): its held-out rows are the runs of
+    cases, weighted by their length, summing to the table's cases. With ``cells`` (the cells'
+    clustering counts the units) the table's rows stay the folds' units, one held-out row per
+    row (tests/test_prior_shift_count_refit.py: the prior estimate against the cases as
+    rows)."""
     (Xt, yt, wt), _, _ = _draw("UCBAdmissions", 60, 1)
     pw = PriorShiftWrapper(GaussianNB(), random_state=0)
+    ho = pw._fit_heldout(Xt, yt, wt)
+    assert getattr(ho, "table_row", None) is not None
+    assert ho.sample_weight.sum() == pytest.approx(wt.sum())
+    pw._cells_given = True  # (as fit sets it for `cells=`)
     ho = pw._fit_heldout(Xt, yt, wt)
     assert ho.y_index.shape[0] == yt.shape[0]
     assert getattr(ho, "table_row", None) is None

@@ -141,7 +141,7 @@ def _kish(w: np.ndarray) -> float:
 
 
 def _table_cases(w: np.ndarray, effective_rows: float | None, cells: Any,
-                 folds: Any = None) -> np.ndarray | None:
+                 folds: Any = None, case_folds: bool = False) -> np.ndarray | None:
     """The whole-number counts of a count table (:func:`probwrap._validation.whole_counts`:
     whole numbers, some above 1, no common factor above 1, at most 1e6 cases) read as CASES:
     the prior-shift estimate, shift test, intervals and few-rows warnings then count its total
@@ -153,14 +153,31 @@ def _table_cases(w: np.ndarray, effective_rows: float | None, cells: Any,
     and counting the cases of such fold models' held-out scores harmed (R's HairEyeColor,
     logistic regression refit on a table of 150 students: the shift test rejected at p = 1e-21
     with no shift and adapt's log loss rose 1.6-1.8 times; the cases as rows: p = 0.5), so
-    a cross-fitted estimator keeps Kish's reading on both sides.
+    a cross-fitted estimator kept Kish's reading on both sides in session 27.
+
+    ``case_folds`` (session 28): the folds split CASES, as the folds of the same cases passed
+    one row each do: the labelled rows are a count table cross-fitted by its cases
+    (:meth:`probwrap._heldout.HeldOutClassifierBase._table_case_folds`, its held-out rows the
+    (row, fold) runs of cases weighted by their length) or rows of equal weight. A table is
+    then read as its cases with ``folds`` too; on the labelled side ``w`` holds the runs'
+    lengths, whole numbers that may share a factor, so they are taken as they are.
 
     Before, 1,000 cases on the 16 cells of a table counted as 6 to 37 rows by Kish's size and
     ``adapt`` never moved (benchmarks/shift_real_hunt27.py: esoph, CoalMiners, Punishment,
     HairEyeColor)."""
-    if effective_rows or cells is not None or folds is not None:
+    if effective_rows or cells is not None or (folds is not None and not case_folds):
         return None
     return whole_counts(w)
+
+
+def _case_runs(w: np.ndarray) -> np.ndarray | None:
+    """The labelled runs' lengths of a count table cross-fitted by its cases (whole numbers,
+    at least one case in all, at most 1e6 cases: :func:`_table_cases` with ``case_folds``),
+    else None."""
+    r = np.round(np.asarray(w, dtype=float))
+    if not r.size or np.any(r < 0) or not np.array_equal(r, w) or not 0 < r.sum() <= 1e6:
+        return None
+    return r.astype(np.int64)
 
 
 def _count_table_hint(w: np.ndarray, n_units: float, cross_fitted: bool = False) -> str:
@@ -350,7 +367,7 @@ class PriorEstimator(_Resampling):
     def fit(
         self, proba: Any, y: Any, sample_weight: Any = None, *, effective_rows: float | None = None,
         class_names: Any = None, source_fold: Any = None, cells: Any = None,
-        _weight_owner: str | None = "PriorEstimator.fit",
+        _weight_owner: str | None = "PriorEstimator.fit", _case_folds: bool = False,
     ) -> PriorEstimator:
         """Learn from held-out posteriors ``proba`` (n, k) and class indices ``y`` in 0..k-1.
 
@@ -406,7 +423,18 @@ class PriorEstimator(_Resampling):
         self.n_classes_ = k
         # a count table's cases (_table_cases): its total counts as the labelled rows, and
         # the bootstrap draws Poisson(count) cases of each row (_resample._bootstrap)
-        self._src_cases = _table_cases(w, effective_rows, self._src_cells, self._src_fold)
+        # ``_case_folds`` (PriorShiftWrapper, session 28): the rows are the runs of a count
+        # table's cases that share a row and a fold (the table cross-fitted by its cases);
+        # their lengths are its cases, as the same cases passed one row each
+        case_runs = (_case_runs(w) if _case_folds and self._src_fold is not None
+                     and self._src_cells is None and not effective_rows else None)
+        # whether the folds split cases (a table cross-fitted by its cases, or rows of equal
+        # weight): the unlabelled side then reads a table as its cases too (estimate)
+        self._folds_split_cases = self._src_fold is None or case_runs is not None or (
+            self._src_cells is None and not effective_rows
+            and bool(np.all(w[w > 0] == np.max(w))))
+        self._src_cases = (case_runs if case_runs is not None else
+                           _table_cases(w, effective_rows, self._src_cells, self._src_fold))
         if self._src_cases is not None:
             effective_rows = float(self._src_cases.sum())
         self.n_source_effective_ = float(effective_rows) if effective_rows else _kish(w)
@@ -752,7 +780,10 @@ class PriorEstimator(_Resampling):
         # a count table's cases (_table_cases): its total counts as the unlabelled rows (the
         # pseudo-rows, the shift test, the intervals and the few-rows warning read it) and the
         # bootstrap draws Poisson(count) cases of each row, as for the cases passed as rows
-        cases_t = _table_cases(w, effective_rows, cell_t, getattr(self, "_src_fold", None))
+        # (with a cross-fitted model: where its folds split cases, session 28)
+        split_cases = getattr(self, "_folds_split_cases", False)
+        cases_t = _table_cases(w, effective_rows, cell_t, getattr(self, "_src_fold", None),
+                               case_folds=split_cases)
         if cases_t is not None:
             effective_rows = float(cases_t.sum())
         n_eff = float(effective_rows) if effective_rows else _kish(w)
@@ -786,7 +817,8 @@ class PriorEstimator(_Resampling):
                 + ("" if cell_t is None else " (Kish's count over the cells' design effect)")
                 + "; the prior estimate is very uncertain and its interval is wide: read "
                 "the interval, not the estimate, or pass more rows (larger batches)."
-                + _count_table_hint(w, n_units, getattr(self, "_src_fold", None) is not None),
+                + _count_table_hint(w, n_units, getattr(self, "_src_fold", None) is not None
+                                    and not split_cases),
                 UserWarning,
                 stacklevel=2,
             )
@@ -916,8 +948,16 @@ class PriorEstimator(_Resampling):
                     # re-weighted so each fold holds its share of every class (as
                     # score_interval does for two classes)
                     w_fold = fold_shares(refit[1], source[1], source[2], refit[0].shape[0])[1]
-                    moments = class_score_moments(class_score_sums(
-                        self.calibrate(source[0]), source[1], w_fold, src))
+                    sums = class_score_sums(self.calibrate(source[0]), source[1], w_fold, src)
+                    cases = getattr(self, "_src_cases", None)
+                    if cases is not None:
+                        # a count table's runs of cases (session 28): each class's Kish count
+                        # over its cases, a run of c cases of weight w_fold / c each (the same
+                        # cases passed one row each give exactly this)
+                        sums = (*sums[:3], np.bincount(
+                            source[1], weights=w_fold ** 2 / np.maximum(cases, 1),
+                            minlength=k))
+                    moments = class_score_moments(sums)
                 self._warn_moment_rank(moments)
                 found = moment_prior_interval((m_t, c_t, n_test), moments,
                                               self.confidence_level)
