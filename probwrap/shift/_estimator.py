@@ -385,8 +385,10 @@ class PriorEstimator(_Resampling):
 
         ``sample_weight``: the source shares, confusion matrices, shift test and intervals read
         only their ratios (Kish's effective size), except a count table (whole numbers, no
-        common factor above 1, some above 1, at most 1e6 cases; without ``cells`` and
-        ``source_fold``), whose cases count (since session 27: the effective size is the
+        common factor above 1, some above 1, at most 1e6 cases; without ``cells``, and
+        with ``source_fold`` only where its folds split cases: ``_case_folds``, the runs of
+        a table cross-fitted by its cases, from ``PriorShiftWrapper``, session 28; an
+        unlabelled table also after labelled rows of equal weight), whose cases count (since session 27: the effective size is the
         total, the bootstrap draws Poisson(count) cases of each row); the calibration
         (``calibration`` not None) reads them by the calibration maps' rule (docs/weights.md):
         row counts when they sum to at least the number of rows, otherwise relative. A
