@@ -258,6 +258,39 @@ def recalibrated_plugin_cutoff(
     return float(min(max(c, lo_p), hi_p)), cw.method_
 
 
+#: Session 28: a tuned cutoff fitted from a Dask or Spark tally's bins (a set whose rows did
+#: not reach the client: more than ``KEPT_ROWS`` rows, or a Spark frame that changed between
+#: its two passes) gets the recalibrated anchor too, fitted on the tally's (bin, class) rows,
+#: when the tallied rows had whole-number weights (none given, or a count table) and were at
+#: most ``RECALIBRATED_ANCHOR_MAX_ROWS`` (:func:`_anchor_from_tally`). False restores the rule
+#: before: the plug-in cutoff as the anchor of every tally (docs/decisions.md, "Tuned-cost
+#: anchor on new sets (session 28)").
+_TALLY_ANCHOR = True
+
+
+def _anchor_from_tally(tally: Any) -> bool:
+    """Whether the anchor of a tuned cutoff is fitted from ``tally``'s bins (``_TALLY_ANCHOR``).
+
+    The anchor is a one-variable fit on the held-out probabilities (a calibration map chosen
+    among the model's own probabilities, temperature, Platt and beta by cross-validated log
+    loss, then carried back to the plug-in value); a tally holds those probabilities by class to
+    1e-3 on the log-odds scale, so each (bin, class) row is the bin's rows repeated, and with
+    whole-number weights those rows are counted as cases (a count table), as the rows in memory
+    would be. Only the cross-validation folds differ (they split cases, not the rows in their
+    order), so the map can differ where the folds' scores are close. Weights that are not whole
+    numbers are pooled per bin, and a bin then counts as one row where its rows count as many
+    (Kish's effective size differs), so those tallies keep the plug-in anchor, and above
+    ``RECALIBRATED_ANCHOR_MAX_ROWS`` rows the in-memory rule keeps it too."""
+    from .scale._dask import tally_is_count_table
+
+    if not _TALLY_ANCHOR or tally is None or tally.n_rows > RECALIBRATED_ANCHOR_MAX_ROWS:
+        return False
+    n = float(tally.n_rows)
+    unit = (tally.squared_weight is not None and np.isclose(tally.total_weight, n)
+            and np.isclose(tally.squared_weight, n))  # sum w = sum w^2 = n: every weight 1
+    return bool(unit or tally_is_count_table(tally))
+
+
 def _flag_all_cutoff(u: np.ndarray) -> float:
     """A cutoff below 0 that flags every row, exact zeros included, given the sorted distinct
     held-out values ``u``: that of the cutoff search's "flag all" decision when the smallest
@@ -611,7 +644,13 @@ class _RuleFitting:
             # weights summing to at least the rows counted as they stood: x1,000 moved the
             # cutoff on breast cancer from 0.20 to 0.28)
             w_choice = choice_weights(ho.sample_weight, ho)
-            if not getattr(ho, "from_tally", False):
+            if getattr(ho, "from_tally", False) and _anchor_from_tally(self.tally_):
+                # session 28: a tally of whole-number rows fits the anchor from its bins, each
+                # (bin, class) row counting its rows as cases (see _anchor_from_tally)
+                anchor, self.cutoff_anchor_map_ = recalibrated_plugin_cutoff(
+                    p, ho.y_index, ho.sample_weight, plugin_cutoff(matrix), self.random_state,
+                    crossfit=False, cases=True)
+            elif not getattr(ho, "from_tally", False):
                 anchor, self.cutoff_anchor_map_ = recalibrated_plugin_cutoff(
                     p, ho.y_index, w_choice, plugin_cutoff(matrix), self.random_state,
                     crossfit=ho.n_folds > 0,

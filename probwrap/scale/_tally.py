@@ -82,8 +82,10 @@ def warn_binned_small_set(owner: str, n_rows: int, resolution: float, reason: st
         f"most {KEPT_ROWS:,} rows is fitted in memory, because {reason}. Within a bin the rows' "
         "labels and weights are pooled, so the fit can differ from the in-memory fit of the "
         "same rows (isotonic steps and a tuned cutoff move to bin edges; the small-set "
-        "safeguards that need rows, such as the recalibrated anchor of a tuned cutoff and "
-        f"method='auto' by cross-validation, do not apply). For the exact fit: {remedy}.",
+        "safeguards that need rows, such as method='auto' by cross-validation over rows, do "
+        "not apply, and the recalibrated anchor of a tuned cutoff is fitted on the bins' "
+        "cases with folds of its own, or not at all for weights that are not whole numbers). "
+        f"For the exact fit: {remedy}.",
         BinnedFitWarning,
         stacklevel=stacklevel,
     )
