@@ -281,7 +281,7 @@ def _anchor_from_tally(tally: Any) -> bool:
     numbers are pooled per bin, and a bin then counts as one row where its rows count as many
     (Kish's effective size differs), so those tallies keep the plug-in anchor, and above
     ``RECALIBRATED_ANCHOR_MAX_ROWS`` rows the in-memory rule keeps it too."""
-    from .scale._dask import tally_is_count_table
+    from .scale._entry import tally_is_count_table
 
     if not _TALLY_ANCHOR or tally is None or tally.n_rows > RECALIBRATED_ANCHOR_MAX_ROWS:
         return False
