@@ -30,13 +30,8 @@ from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
 import probwrap.cli._progress as progress
-from probwrap.cli import main
+from probwrap.cli import main as cli_main
 
-progress.PROGRESS_DELAY = 1e9
-if len(sys.argv) > 2:
-    import probwrap.shift._repeats as repeats
-
-    repeats.REFERENCE_MODELS = float(sys.argv[2])
 REPEAT = "repeat another row exactly"
 SETS = [("Cowles", "volunteer"), ("TitanicSurvival", "survived"), ("Mroz", "lfp")]
 
@@ -54,51 +49,62 @@ def model():
 def warned(root, unlabelled, reference):
     err = io.StringIO()
     with contextlib.redirect_stderr(err), contextlib.redirect_stdout(io.StringIO()):
-        code = main(["prevalence", "--unlabelled", str(root / f"{unlabelled}.csv"),
-                     "--score-column", "s", "--reference", str(root / f"{reference}.csv"),
-                     "--label-column", "y", "--positive-label", "1", "--resamples", "40",
-                     "--format", "json"])
+        code = cli_main(["prevalence", "--unlabelled", str(root / f"{unlabelled}.csv"),
+                         "--score-column", "s", "--reference", str(root / f"{reference}.csv"),
+                         "--label-column", "y", "--positive-label", "1", "--resamples", "40",
+                         "--format", "json"])
     assert code == 0, err.getvalue()
     return REPEAT in err.getvalue()
 
 
-rows = []
-seeds = range(int(sys.argv[1]) if len(sys.argv) > 1 else 3)
-for item, label in SETS:
-    X, y = data(item, label)
-    for seed in seeds:
-        order = np.random.default_rng(seed).permutation(y.size)
-        lab, new = order[: int(0.6 * y.size)], order[int(0.6 * y.size):][:500]
-        rng = np.random.default_rng(seed + 1)
-        pool = rng.choice(new, 150, replace=False)
-        copies = rng.choice(pool, 400)
-        refit = model().fit(X[lab], y[lab])
-        small_fit, small = lab[60:], lab[:60]
-        small_model = model().fit(X[small_fit], y[small_fit])
-        files = {
-            "ref5": (cross_val_predict(model(), X[lab], y[lab], cv=5,
-                                       method="predict_proba")[:, 1], y[lab]),
-            "ref10": (cross_val_predict(model(), X[lab], y[lab], cv=10,
-                                        method="predict_proba")[:, 1], y[lab]),
-            "same": (refit.predict_proba(X[lab])[:, 1], y[lab]),
-            "small_same": (small_model.predict_proba(X[small])[:, 1], y[small]),
-        }
-        with tempfile.TemporaryDirectory() as tmp:
-            root = Path(tmp)
-            for name, (s, yy) in files.items():
-                pd.DataFrame({"s": s, "y": yy}).to_csv(root / f"{name}.csv", index=False)
-            for prefix, m in (("", refit), ("small_", small_model)):
-                pd.DataFrame({"s": m.predict_proba(X[new])[:, 1]}).to_csv(
-                    root / f"{prefix}distinct.csv", index=False)
-                pd.DataFrame({"s": m.predict_proba(X[copies])[:, 1]}).to_csv(
-                    root / f"{prefix}copies.csv", index=False)
-            for ref in files:
-                prefix = "small_" if ref == "small_same" else ""
-                for kind in ("distinct", "copies"):
-                    rows.append(dict(set=item, seed=seed, reference=ref, unlabelled=kind,
-                                     warned=warned(root, prefix + kind, ref)))
-df = pd.DataFrame(rows)
-print(df.pivot_table(index="reference", columns="unlabelled", values="warned",
-                     aggfunc=["sum", "count"]).to_string())
-print(df.pivot_table(index=["set", "reference"], columns="unlabelled", values="warned",
-                     aggfunc="sum").to_string())
+def main(argv=None):
+    argv = sys.argv[1:] if argv is None else list(argv)
+    progress.PROGRESS_DELAY = 1e9
+    if len(argv) > 1:
+        import probwrap.shift._repeats as repeats
+
+        repeats.REFERENCE_MODELS = float(argv[1])
+    rows = []
+    seeds = range(int(argv[0]) if len(argv) > 0 else 3)
+    for item, label in SETS:
+        X, y = data(item, label)
+        for seed in seeds:
+            order = np.random.default_rng(seed).permutation(y.size)
+            lab, new = order[: int(0.6 * y.size)], order[int(0.6 * y.size):][:500]
+            rng = np.random.default_rng(seed + 1)
+            pool = rng.choice(new, 150, replace=False)
+            copies = rng.choice(pool, 400)
+            refit = model().fit(X[lab], y[lab])
+            small_fit, small = lab[60:], lab[:60]
+            small_model = model().fit(X[small_fit], y[small_fit])
+            files = {
+                "ref5": (cross_val_predict(model(), X[lab], y[lab], cv=5,
+                                           method="predict_proba")[:, 1], y[lab]),
+                "ref10": (cross_val_predict(model(), X[lab], y[lab], cv=10,
+                                            method="predict_proba")[:, 1], y[lab]),
+                "same": (refit.predict_proba(X[lab])[:, 1], y[lab]),
+                "small_same": (small_model.predict_proba(X[small])[:, 1], y[small]),
+            }
+            with tempfile.TemporaryDirectory() as tmp:
+                root = Path(tmp)
+                for name, (s, yy) in files.items():
+                    pd.DataFrame({"s": s, "y": yy}).to_csv(root / f"{name}.csv", index=False)
+                for prefix, m in (("", refit), ("small_", small_model)):
+                    pd.DataFrame({"s": m.predict_proba(X[new])[:, 1]}).to_csv(
+                        root / f"{prefix}distinct.csv", index=False)
+                    pd.DataFrame({"s": m.predict_proba(X[copies])[:, 1]}).to_csv(
+                        root / f"{prefix}copies.csv", index=False)
+                for ref in files:
+                    prefix = "small_" if ref == "small_same" else ""
+                    for kind in ("distinct", "copies"):
+                        rows.append(dict(set=item, seed=seed, reference=ref, unlabelled=kind,
+                                         warned=warned(root, prefix + kind, ref)))
+    df = pd.DataFrame(rows)
+    print(df.pivot_table(index="reference", columns="unlabelled", values="warned",
+                         aggfunc=["sum", "count"]).to_string())
+    print(df.pivot_table(index=["set", "reference"], columns="unlabelled", values="warned",
+                         aggfunc="sum").to_string())
+
+
+if __name__ == "__main__":
+    main()

@@ -28,12 +28,13 @@ import unpicked_data as U  # noqa: E402
 import probwrap._calibration_auto as A  # noqa: E402
 from probwrap import CalibrationWrapper  # noqa: E402
 
-warnings.simplefilter("ignore")  # a sweep: the wrappers' warnings are counted elsewhere
+
 def _gmean(a) -> float:
     return float(np.exp(np.mean(np.log(np.maximum(a, 1e-3)))))
 
 
 def main() -> None:
+    warnings.simplefilter("ignore")  # a sweep: the wrappers' warnings are counted elsewhere
     specs, _ = U.enumerate_all(0, verbose=False)
     sample = U.varied_sample(specs, 200, 0)
     rows = []

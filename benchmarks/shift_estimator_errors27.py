@@ -20,33 +20,44 @@ from sklearn.preprocessing import StandardScaler
 
 from probwrap.shift import PriorEstimator
 
-warnings.simplefilter("ignore")
+
 def sets():
     X, y = load_breast_cancer(return_X_y=True)
     yield "breast cancer (2 features)", X[:, :2], y
     X, y = load_wine(return_X_y=True)
     yield "wine 1 vs rest", X[:, :3], (y == 1).astype(int)
-for name, X, y in sets():
-    for mname, m in (("lr", make_pipeline(StandardScaler(), LogisticRegression())), ("nb", GaussianNB())):
-        P = cross_val_predict(m, X, y, cv=5, method="predict_proba")
-        errs = {k: [] for k in ("em", "pacc", "bbse", "acc", "bbse_soft")}
-        rng = np.random.default_rng(0)
-        i0, i1 = np.flatnonzero(y == 0), np.flatnonzero(y == 1)
-        for d in range(40):
-            rng.shuffle(i0)
-            rng.shuffle(i1)
-            nl0, nl1 = len(i0)//2, len(i1)//2
-            lab = np.r_[i0[:nl0], i1[:nl1]]
-            rest0, rest1 = i0[nl0:], i1[nl1:]
-            share = [0.15, 0.3, 0.5][d % 3]
-            n = 60
-            n1 = int(round(share * n))
-            n0 = n - n1
-            unl = np.r_[rest0[:n0], rest1[:n1]]
-            truth = n1 / n
-            errs.setdefault("em_ml", [])
-            for k in errs:
-                est = PriorEstimator(method=k.replace("_ml", ""), prior_strength=(0 if k == "em_ml" else 20), n_resamples=0, random_state=0).fit(P[lab], y[lab])
-                r = est.estimate(P[unl], interval=False)
-                errs[k].append(abs(r.prior[1] - truth))
-        print(name, mname, {k: round(float(np.mean(v)), 4) for k, v in errs.items()})
+
+
+def main():
+    warnings.simplefilter("ignore")
+    for name, X, y in sets():
+        for mname, m in (("lr", make_pipeline(StandardScaler(), LogisticRegression())),
+                         ("nb", GaussianNB())):
+            P = cross_val_predict(m, X, y, cv=5, method="predict_proba")
+            errs = {k: [] for k in ("em", "pacc", "bbse", "acc", "bbse_soft")}
+            rng = np.random.default_rng(0)
+            i0, i1 = np.flatnonzero(y == 0), np.flatnonzero(y == 1)
+            for d in range(40):
+                rng.shuffle(i0)
+                rng.shuffle(i1)
+                nl0, nl1 = len(i0)//2, len(i1)//2
+                lab = np.r_[i0[:nl0], i1[:nl1]]
+                rest0, rest1 = i0[nl0:], i1[nl1:]
+                share = [0.15, 0.3, 0.5][d % 3]
+                n = 60
+                n1 = int(round(share * n))
+                n0 = n - n1
+                unl = np.r_[rest0[:n0], rest1[:n1]]
+                truth = n1 / n
+                errs.setdefault("em_ml", [])
+                for k in errs:
+                    est = PriorEstimator(method=k.replace("_ml", ""),
+                                         prior_strength=(0 if k == "em_ml" else 20),
+                                         n_resamples=0, random_state=0).fit(P[lab], y[lab])
+                    r = est.estimate(P[unl], interval=False)
+                    errs[k].append(abs(r.prior[1] - truth))
+            print(name, mname, {k: round(float(np.mean(v)), 4) for k, v in errs.items()})
+
+
+if __name__ == "__main__":
+    main()
