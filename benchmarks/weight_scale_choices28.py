@@ -46,26 +46,31 @@ def choices(kind, est, X, y, w, Xu=None, wu=None, seed=0):
     return out, ws
 
 
-rng = np.random.default_rng(28)
-for name, loader in SETS.items():
-    X, y = loader(return_X_y=True)
-    X = StandardScaler().fit_transform(X)
-    perm = rng.permutation(len(y))
-    X, y = X[perm], y[perm]
-    n = min(len(y) // 2, 150)
-    Xa, ya = X[:n], y[:n]          # labelled (fit)
-    Xb, yb = X[n:2 * n], y[n:2 * n]  # training rows of the frozen model
-    Xu = X[n:]                       # unlabelled for adapt
-    frozen = FrozenEstimator(LogisticRegression(C=0.3, max_iter=2000).fit(Xb, yb))
-    for wkind in ("float", "count"):
-        w = rng.uniform(0.2, 3.0, size=n) if wkind == "float" else rng.integers(1, 4, size=n).astype(float)
-        wu = rng.uniform(0.2, 3.0, size=Xu.shape[0])
-        for mname, est in (("GNB-xfit", GaussianNB()), ("LR-frozen", frozen)):
-            for kind in ("auto", "tuned", "prior_fit", "prior_adapt"):
-                if kind == "prior_adapt" and wkind == "count":
-                    continue
-                res = [choices(kind, est, Xa, ya, w * s, Xu, wu * s) for s in SCALES]
-                vals = [r[0] for r in res]
-                same = all(v == vals[0] for v in vals)
-                print(f"{name:13s} {wkind:5s} {mname:9s} {kind:11s} {'SAME' if same else 'DIFF'} "
-                      + " | ".join(f"x{s:g}:{v} {r[1]}" for s, v, r in zip(SCALES, vals, res, strict=True)), flush=True)
+def main() -> None:
+    rng = np.random.default_rng(28)
+    for name, loader in SETS.items():
+        X, y = loader(return_X_y=True)
+        X = StandardScaler().fit_transform(X)
+        perm = rng.permutation(len(y))
+        X, y = X[perm], y[perm]
+        n = min(len(y) // 2, 150)
+        Xa, ya = X[:n], y[:n]          # labelled (fit)
+        Xb, yb = X[n:2 * n], y[n:2 * n]  # training rows of the frozen model
+        Xu = X[n:]                       # unlabelled for adapt
+        frozen = FrozenEstimator(LogisticRegression(C=0.3, max_iter=2000).fit(Xb, yb))
+        for wkind in ("float", "count"):
+            w = rng.uniform(0.2, 3.0, size=n) if wkind == "float" else rng.integers(1, 4, size=n).astype(float)
+            wu = rng.uniform(0.2, 3.0, size=Xu.shape[0])
+            for mname, est in (("GNB-xfit", GaussianNB()), ("LR-frozen", frozen)):
+                for kind in ("auto", "tuned", "prior_fit", "prior_adapt"):
+                    if kind == "prior_adapt" and wkind == "count":
+                        continue
+                    res = [choices(kind, est, Xa, ya, w * s, Xu, wu * s) for s in SCALES]
+                    vals = [r[0] for r in res]
+                    same = all(v == vals[0] for v in vals)
+                    print(f"{name:13s} {wkind:5s} {mname:9s} {kind:11s} {'SAME' if same else 'DIFF'} "
+                          + " | ".join(f"x{s:g}:{v} {r[1]}" for s, v, r in zip(SCALES, vals, res, strict=True)), flush=True)
+
+
+if __name__ == "__main__":
+    main()
