@@ -487,7 +487,9 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         self.fold_disagreement_ = np.nan
         self.response_ = ho.response
         self._cross_fitted = ho.n_folds > 0
+        self.__dict__.pop("_zero_floor", None)
         self.clip_ = self._choose_clip(ho.values, ho.sample_weight)
+        self._warn_zero_floor()
         self.platt_fit_range_ = getattr(self, "_platt_range", None)
         scores = self._to_scores(ho.values)
         w = self._count_scale_weights(ho.sample_weight)
@@ -893,8 +895,54 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             keep = w > 0
             if not keep.all():
                 v = values[keep]
+                w = w[keep]
         # the smallest positive value without copying the positive ones out (the same value)
-        return self._clip_from_smallest(float(np.min(v, where=v > 0, initial=np.inf)))
+        smallest = float(np.min(v, where=v > 0, initial=np.inf))
+        clip = self._clip_from_smallest(smallest)
+        if not smallest < 2.0 * DEFAULT_CLIP or v.ndim != 2 or v.shape[1] < 3 or w.size == 0:
+            return clip
+        zeros = int(np.count_nonzero(v == 0.0))
+        if zeros == 0 or v.shape[0] != w.shape[0]:
+            return clip
+        # More than two classes, exact zeros, and positive probabilities below 2e-12: the model's own
+        # resolution says nothing about how far below its smallest value a zero lies (an
+        # isotonic-calibrated naive Bayes: isotonic steps at exactly 0, interpolated among
+        # naive Bayes' underflowing probabilities down to 1.7e-313 on Stat2Data's Caterpillars).
+        # At log(1e-12) = -27.6 the zeros dominate the scale maps' fit and their fold scores
+        # (docs/calibration.md, "Exact zeros"). The floor falls back to what the labelled rows
+        # can tell apart: half the Krichevsky-Trofimov floor 1 / (2 (N + 1) (k - 1)) for N rows,
+        # the bound the prior-shift calibration puts on every input
+        # (probwrap.shift._calibration.heldout_clip). Two classes keep the old floor: Platt's
+        # map already limits such scores (PlattMap(limit_scores=True)), and on scikit-learn's
+        # breast cancer the same input moved auto both ways (0.82-1.10x the sigmoid before).
+        from .calibration._base import count_weights
+
+        with np.errstate(over="ignore"):
+            n_rows = float(count_weights(np.asarray(w, dtype=float))[0].sum())
+        if not 0.0 < n_rows < np.inf:
+            return clip
+        floor = min(0.25, 0.25 / ((n_rows + 1.0) * (v.shape[1] - 1)))
+        if floor <= clip:
+            return clip
+        self._zero_floor = (zeros, v.shape[0], floor)
+        return floor
+
+    def _warn_zero_floor(self) -> None:
+        """Once per fit: the held-out probabilities' exact zeros were floored at ``clip_``."""
+        found = self.__dict__.pop("_zero_floor", None)
+        if found is None:
+            return
+        zeros, rows, floor = found
+        warnings.warn(
+            f"CalibrationWrapper: the model gave probabilities of exactly 0 ({zeros} value(s) "
+            f"on {rows} held-out rows) and positive ones below 2e-12, so its own probabilities "
+            "say nothing about how small a zero is; the parametric maps (temperature, vector "
+            f"scaling, Platt and beta one-vs-rest) see every probability below {floor:.3g} as {floor:.3g} "
+            "(clip_, from the number of held-out rows), at fit and at predict. Pass `clip=` "
+            "to choose the floor yourself.",
+            UserWarning,
+            stacklevel=4,
+        )
 
     @staticmethod
     def _clip_from_smallest(smallest: float) -> float:
