@@ -941,7 +941,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             "(clip_, from the number of held-out rows), at fit and at predict. Pass `clip=` "
             "to choose the floor yourself.",
             UserWarning,
-            stacklevel=4,
+            stacklevel=3,
         )
 
     @staticmethod
