@@ -268,7 +268,11 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         fit. ``None`` chooses it from the held-out probabilities: half the smallest non-zero
         probability (for a random forest of ``n`` trees, whose probabilities are multiples of
         ``1/n``, that is ``1/(2n)``), kept within ``[1e-12, 0.25]``; the value used is
-        ``clip_``. Order-based maps (isotonic, binning, Venn–Abers) always see the
+        ``clip_``. With more than two classes, exact zeros and non-zero probabilities below
+        ``2e-12`` (an isotonic-calibrated naive Bayes), it is instead half the
+        Krichevsky-Trofimov floor of the ``N`` held-out rows, ``1 / (4 (N + 1) (k - 1))``, with
+        a warning (docs/calibration.md, "Exact zeros from an already calibrated model").
+        Order-based maps (isotonic, binning, Venn–Abers) always see the
         full-resolution log-odds ``log p1 - log p0``, which keep the order of probabilities deep
         in the tails; exact zeros become the smallest positive float. Platt's map (named by
         ``method``, or an ``auto`` candidate) is fitted as ``PlattMap(limit_scores=True)``,
