@@ -141,7 +141,8 @@ def count_tables():
         np.r_[np.ones(len(d), bool), np.zeros(len(d), bool)],
         np.r_[d["Claims"].to_numpy(), (d["Holders"] - d["Claims"]).to_numpy()])
     d = _r("vcdExtra", "Dyke")
-    add("Dyke good knowledge (table)", d[["Reading", "Radio", "Lectures", "Newspaper"]],
+    # the four source-of-knowledge factors: every column but the outcome and the count
+    add("Dyke good knowledge (table)", d.drop(columns=["rownames", "Knowledge", "Freq"], errors="ignore"),
         d["Knowledge"] == "Good", d["Freq"])
     d = _r("vcdExtra", "Mental")
     add("Mental health (table, 4)", d[["ses"]], d["mental"], d["Freq"])
