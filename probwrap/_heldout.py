@@ -819,6 +819,23 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         return (f" To weight the model too, pass the weights to its final step by name as well: "
                 f"fit(X, y, sample_weight=w, {name}__sample_weight=w).")
 
+    def _accept_heldout(self, estimator: Any, classes: Any, values: np.ndarray,
+                        response: str) -> None:
+        """Check the held-out predictions and keep the model's fitted attributes (both the
+        row-by-row and the count-table cross-fitting end here)."""
+        if not np.all(np.isfinite(values)):
+            raise ValueError(
+                f"`estimator` returned NaN or infinite values from {response}; held-out "
+                "predictions must be finite."
+            )
+        check_model_probabilities(values, response, "`estimator`", "held-out rows")
+        self.estimator_ = estimator
+        self.classes_ = np.asarray(classes)
+        if hasattr(estimator, "n_features_in_"):
+            self.n_features_in_ = estimator.n_features_in_
+        if hasattr(estimator, "feature_names_in_"):
+            self.feature_names_in_ = estimator.feature_names_in_
+
     def _fit_heldout(
         self,
         X: Any,
@@ -1004,18 +1021,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                 )
             warn_weightless_classes(self, classes, np.asarray(y_index), sw, stacklevel=3)
         values = np.asarray(values, dtype=float)
-        if not np.all(np.isfinite(values)):
-            raise ValueError(
-                f"`estimator` returned NaN or infinite values from {response}; held-out "
-                "predictions must be finite."
-            )
-        check_model_probabilities(values, response, "`estimator`", "held-out rows")
-        self.estimator_ = estimator
-        self.classes_ = np.asarray(classes)
-        if hasattr(estimator, "n_features_in_"):
-            self.n_features_in_ = estimator.n_features_in_
-        if hasattr(estimator, "feature_names_in_"):
-            self.feature_names_in_ = estimator.feature_names_in_
+        self._accept_heldout(estimator, classes, values, response)
         ho = HeldOutPredictions(
             values=values,
             response=response,
@@ -1164,18 +1170,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             mine = fold == f
             at[mine] = offset[f] + np.searchsorted(test, row[mine])
         values = np.concatenate(blocks, axis=0)[at]
-        if not np.all(np.isfinite(values)):
-            raise ValueError(
-                f"`estimator` returned NaN or infinite values from {response}; held-out "
-                "predictions must be finite."
-            )
-        check_model_probabilities(values, response, "`estimator`", "held-out rows")
-        self.estimator_ = estimator
-        self.classes_ = np.asarray(classes)
-        if hasattr(estimator, "n_features_in_"):
-            self.n_features_in_ = estimator.n_features_in_
-        if hasattr(estimator, "feature_names_in_"):
-            self.feature_names_in_ = estimator.feature_names_in_
+        self._accept_heldout(estimator, classes, values, response)
         ho = HeldOutPredictions(
             values=values,
             response=response,
