@@ -808,7 +808,8 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
     if column not in frame.columns:
         raise no_column(frame, column, path, flag)
     series = frame[column]
-    if series.dtype == object:
+    if series.dtype == object or pd.api.types.is_string_dtype(series.dtype):
+        # (object under pandas 2, the string dtype under pandas 3)
         # a field of spaces only (a cell holding a typed space) is as empty as an empty
         # field: missing, not "' ' is not a finite number" (session 28)
         spaces = series.map(lambda v: isinstance(v, str) and v != "" and not v.strip())
