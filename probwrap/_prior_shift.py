@@ -1230,6 +1230,18 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             sets").
         """
         check_fitted(self, "prior_estimator_")
+        est = self.prior_estimator_
+        # the estimator's reason why more than two classes' shares are not identified is kept
+        # here and said within the wrapper's own PriorNotIdentifiedWarning (one warning that
+        # says both; since session 29), not as a second warning of the same class
+        est._rank_notes = []
+        try:
+            return self._adapt(X, sample_weight, cells)
+        finally:
+            est.__dict__.pop("_rank_notes", None)
+
+    def _adapt(self, X: Any, sample_weight: Any, cells: Any) -> PriorShiftWrapper:
+        """The body of :meth:`adapt` (which keeps the estimator's rank note meanwhile)."""
         self._check_features(X, "passed to adapt")
         refuse_distributed(self, X, sample_weight)
         est = self.prior_estimator_
@@ -1596,18 +1608,26 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         """Warn when a class's interval spans all of [0, 1]: the data then say nothing about
         that class's share, and ``target_prior_`` is not a usable estimate (whatever its value).
         Not repeated where the estimator already warned that the priors are not identified.
-        Returns whether either is the case (then no :meth:`_warn_imprecise` on top)."""
-        if interval is None:
-            return False
-        if not identified:
-            return True
+        Where the estimator found during this ``adapt`` that the labelled classes' mean scores
+        identify too few directions (more than two classes), its reason is said in the same
+        warning (one :class:`~probwrap.shift.PriorNotIdentifiedWarning`, not two; since
+        session 29). Returns whether a share's interval spans [0, 1] or the estimator's own
+        rule says it is not identified (then no :meth:`_warn_imprecise` on top)."""
+        from .shift import PriorNotIdentifiedWarning
+
+        notes = getattr(self.prior_estimator_, "_rank_notes", None) or []
+        note = " ".join(notes)
+        if interval is None or not identified:
+            if note:
+                warnings.warn(f"adapt: {note}", PriorNotIdentifiedWarning, stacklevel=3)
+            return interval is not None
         iv = np.asarray(interval, dtype=float)
         if iv.ndim != 2 or iv.shape[1] != 2:
+            if note:
+                warnings.warn(f"adapt: {note}", PriorNotIdentifiedWarning, stacklevel=3)
             return False
         wide = np.flatnonzero((iv[:, 0] <= 1e-6) & (iv[:, 1] >= 1.0 - 1e-6))
         if wide.size:
-            from .shift import PriorNotIdentifiedWarning
-
             names = ", ".join(repr(plain(self.classes_[c])) for c in wide)
             est = ", ".join(f"{float(self.target_prior_[c]):.3g}" for c in wide)
             warnings.warn(
@@ -1615,10 +1635,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 f"{names} spans all of [0, 1], so the estimate ({est}) is not informative: the "
                 "unlabelled rows and this model cannot pin that share down. predict_proba moves "
                 f"only as far as the shift evidence allows (adaptation_weight_ = "
-                f"{self.adaptation_weight_:.3g}).",
+                f"{self.adaptation_weight_:.3g})." + (f" Why: {note}" if note else ""),
                 PriorNotIdentifiedWarning,
                 stacklevel=3,
             )
+        elif note:
+            warnings.warn(f"adapt: {note}", PriorNotIdentifiedWarning, stacklevel=3)
         return bool(wide.size)
 
     def _warn_no_shift_harm(self, res: Any, weight: float, free: float) -> None:

@@ -228,3 +228,41 @@ def test_dask_rows_give_the_same_partial_interval_and_warning(client):
         got.append(np.asarray(wrapper.target_prior_interval_, float))
     np.testing.assert_allclose(got[1], got[0], atol=1e-9)
     assert got[0][2, 1] == pytest.approx(1.0) and got[0][0, 1] < 0.7 and got[0][1, 1] < 0.7
+
+
+def test_adapt_says_the_reason_and_the_whole_range_in_one_warning():
+    # The same two-posterior-row model in memory: the estimator finds that the class means
+    # identify 1 of the 2 directions, and the wrapper that class 2's interval spans [0, 1].
+    # Before, adapt raised two PriorNotIdentifiedWarnings saying these two things apart; now
+    # one says both. A PriorEstimator used on its own still gives its reason (test above), and
+    # the wrapper leaves nothing behind on it.
+    from sklearn.linear_model import LogisticRegression
+
+    rng = np.random.default_rng(0)
+
+    def draw(n, prior):
+        y = rng.choice(3, size=n, p=prior)
+        x = np.where(y == 0, 0, np.where(y == 1, 1, rng.integers(0, 2, size=n)))
+        return x[:, None].astype(float), y
+
+    model = LogisticRegression().fit(*draw(300, SOURCE))
+    X_s, y_s = draw(400, SOURCE)
+    X_t, _ = draw(3000, np.array([0.2, 0.2, 0.6]))
+    wrapper = PriorShiftWrapper(FrozenEstimator(model), random_state=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        wrapper.fit(X_s, y_s)
+    for _ in range(2):  # a second adapt says it again, once
+        with warnings.catch_warnings(record=True) as ws:
+            warnings.simplefilter("always")
+            wrapper.adapt(X_t)
+        msgs = [str(w.message) for w in ws
+                if issubclass(w.category, PriorNotIdentifiedWarning)]
+        assert len(msgs) == 1, msgs
+        assert "spans all of [0, 1]" in msgs[0] and "class share of 2" in msgs[0]
+        assert "move along 1 of the 2 directions" in msgs[0]
+    assert not hasattr(wrapper.prior_estimator_, "_rank_notes")
+    with warnings.catch_warnings(record=True) as ws:
+        warnings.simplefilter("always")
+        wrapper.prior_estimator_.estimate(model.predict_proba(X_t))
+    assert sum("move along 1 of the 2 directions" in str(w.message) for w in ws) == 1

@@ -1324,7 +1324,7 @@ class PriorEstimator(_Resampling):
         rank = moment_identified_rank(means)
         if rank >= k - 1:
             return False
-        warnings.warn(
+        message = (
             f"The class priors are not identified: the labelled rows' {k} classes have mean "
             f"scores that move along {rank} of the {k - 1} directions of the class shares "
             "(the calibrated posteriors vary along too few directions between the classes; a "
@@ -1332,10 +1332,14 @@ class PriorEstimator(_Resampling):
             "Along the other directions no share is told apart from another, so each share's "
             "interval is its whole range over the shares consistent with the identified "
             + ("direction" if rank == 1 else "directions")
-            + ", and the estimate along them is EM's starting point, not evidence.",
-            PriorNotIdentifiedWarning,
-            stacklevel=3,
-        )
+            + ", and the estimate along them is EM's starting point, not evidence.")
+        notes = getattr(self, "_rank_notes", None)
+        if notes is not None:
+            # within PriorShiftWrapper.adapt: said in the wrapper's one warning (session 29)
+            if message not in notes:
+                notes.append(message)
+            return True
+        warnings.warn(message, PriorNotIdentifiedWarning, stacklevel=3)
         return True
 
     def _warn_few_labelled(self, n_src: float | None, *, design: bool = False) -> None:
