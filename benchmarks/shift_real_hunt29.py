@@ -156,9 +156,11 @@ def monitor_one(name, X, y, mname, seed, mrows, crashes, n_labelled=N_LABELLED):
             with warnings.catch_warnings(record=True) as ws:
                 warnings.simplefilter("always")
                 try:
-                    psw.fit(X.iloc[L], y[L])
+                    # weights of one, as the adapt cells (a forest draws its bootstrap
+                    # otherwise when sample_weight is given)
+                    psw.fit(X.iloc[L], y[L], sample_weight=np.ones(len(L)))
                     n_fit = len(ws)
-                    tab = psw.monitor(Xb, batches=bl)
+                    tab = psw.monitor(Xb, batches=bl, sample_weight=np.ones(len(bl)))
                 except Exception as e:  # noqa: BLE001 (a crash is a finding)
                     crashes.append((tag, f"{type(e).__name__}: {e}"[:300]))
                     print(f"  CRASH {tag}: {type(e).__name__}: {e}", flush=True)
