@@ -38,7 +38,9 @@ batch and per call (``--feature-fdr`` reads them with Holm's and Benjamini-Hochb
 corrections through statsmodels' ``multipletests``).
 
 Run: nice python benchmarks/shift_real_hunt29.py --quick           (seed 1, 40 labelled rows,
-                                                                   lr and knn)
+                                                                   lr and knn: 192 cells and
+                                                                   48 monitor calls, 100 s)
+     (the full seed-1 run: 960 cells and 240 monitor calls, 24 minutes at load 8-15)
      nice python benchmarks/shift_real_hunt29.py [--seeds 1] [--seed-start 1] [--sets NAME ...]
                                                  [--models lr knn] [--out FILE.csv]
      nice python benchmarks/shift_real_hunt29.py --classify F.csv     (the adapt cells)
