@@ -15,12 +15,14 @@ its end:
   scikit-learn's own check (``_get_feature_names``) refuses them.
 
 :func:`check_feature_input` raises a short error naming ``X`` and what was expected, but only
-where the estimator's first step is a scikit-learn estimator that takes 2-d input (its tags:
-``two_d_array`` and not ``one_d_array``, ``string`` or ``dict``; a ``FunctionTransformer``
-only with ``validate=True``; the step is found as :func:`_first_step` says). Anything else
-(text vectorisers, dict vectorisers, a ``FunctionTransformer`` that reshapes, a model from
-another library, a ``FeatureUnion`` or other step whose inner steps cannot be told) gets ``X``
-as before.
+where a step that receives ``X`` as it is given is a scikit-learn estimator that takes 2-d input
+(its tags: ``two_d_array`` and not ``one_d_array``, ``string`` or ``dict``; a
+``FunctionTransformer`` only with ``validate=True``). The steps are found as :func:`_first_step`
+says, and inside a ``FeatureUnion``, a voting or a stacking ensemble every inner step is
+followed (:func:`_steps_given_X`: scikit-learn fits each of them on the whole ``X``, so one
+that refuses it fails the fit). Anything else (text vectorisers, dict vectorisers, a
+``FunctionTransformer`` that reshapes, a model from another library, a step whose inner steps
+cannot be told) gets ``X`` as before.
 """
 
 from __future__ import annotations
@@ -40,15 +42,18 @@ def _first_step(estimator: Any) -> Any:
 
     Followed through the steps that hand ``X`` on as it is: ``FrozenEstimator``, probwrap's
     wrappers, the first step of a ``Pipeline``, scikit-learn's parameter searches
-    (``GridSearchCV``, ...) and ``CalibratedClassifierCV``. A scikit-learn ensemble of one
-    estimator (forests, bagging, boosting) validates ``X`` itself and is judged by its own
-    tags. Any other step around estimators (``FeatureUnion``, ``ColumnTransformer``, voting,
-    stacking, one-vs-rest, ...) may reach steps that take 1-d input: None, nothing is judged
-    (a ``GridSearchCV`` or ``FeatureUnion`` of text vectorisers reports the tags of a 2-d
-    model)."""
+    (``GridSearchCV``, ...), ``CalibratedClassifierCV`` and ``OneVsRestClassifier``. A
+    scikit-learn ensemble of one estimator (forests, bagging, boosting) validates ``X`` itself
+    and is judged by its own tags; so is a ``ColumnTransformer`` (it selects columns of a 2-d
+    ``X``). A step that hands ``X`` to several inner steps (``FeatureUnion``, voting, stacking)
+    is returned as it is: :func:`_steps_given_X` reads its parts. Any other step around an
+    estimator: None, nothing is judged (a ``GridSearchCV`` or ``FeatureUnion`` of text
+    vectorisers reports the tags of a 2-d model)."""
     from sklearn.calibration import CalibratedClassifierCV
+    from sklearn.compose import ColumnTransformer
     from sklearn.ensemble import BaseEnsemble
     from sklearn.frozen import FrozenEstimator
+    from sklearn.multiclass import OneVsRestClassifier
     from sklearn.pipeline import Pipeline
 
     for _ in range(20):  # nesting depth; a loop of references cannot hang the fit
@@ -57,12 +62,15 @@ def _first_step(estimator: Any) -> Any:
             if not steps:
                 return None
             estimator = steps[0]
-        elif isinstance(estimator, (FrozenEstimator, CalibratedClassifierCV)) or (
+        elif isinstance(estimator, (FrozenEstimator, CalibratedClassifierCV,
+                                    OneVsRestClassifier)) or (
                 type(estimator).__module__.startswith(("probwrap.", "sklearn.model_selection."))
                 and type(estimator).__name__.endswith(("Wrapper", "SearchCV"))
                 and hasattr(estimator, "estimator")):
             estimator = estimator.estimator
-        elif isinstance(estimator, BaseEnsemble):
+        elif isinstance(estimator, (BaseEnsemble, ColumnTransformer)):
+            return estimator
+        elif _parts_given_X(estimator) is not None:
             return estimator
         elif any(hasattr(estimator, name) for name in (
                 "transformer_list", "transformers", "estimators")) or hasattr(
@@ -70,6 +78,61 @@ def _first_step(estimator: Any) -> Any:
             return None
         else:
             return estimator
+    return None
+
+
+def _parts_given_X(step: Any) -> list | None:
+    """The inner steps that each receive the whole ``X`` of a scikit-learn ``FeatureUnion``,
+    ``VotingClassifier`` / ``VotingRegressor`` or ``StackingClassifier`` /
+    ``StackingRegressor`` (dropped ones left out; a stack's final estimator sees the inner
+    steps' predictions, not ``X``), or None for any other step."""
+    from sklearn.ensemble import (
+        StackingClassifier,
+        StackingRegressor,
+        VotingClassifier,
+        VotingRegressor,
+    )
+    from sklearn.pipeline import FeatureUnion
+
+    if isinstance(step, FeatureUnion):
+        parts = [s for _, s in step.transformer_list]
+    elif isinstance(step, (VotingClassifier, VotingRegressor, StackingClassifier,
+                           StackingRegressor)):
+        parts = [s for _, s in step.estimators]
+    else:
+        return None
+    return [s for s in parts if s is not None and not isinstance(s, str)]
+
+
+def _steps_given_X(estimator: Any) -> list[tuple[Any, list[str]]]:
+    """Every step that receives ``X`` as it is given to the wrapper, with the names of the
+    composite steps (``FeatureUnion``, voting, stacking) it sits in.
+
+    Each inner step of a ``FeatureUnion``, a voting or a stacking ensemble is fitted on the
+    whole ``X``, so each is followed as :func:`_first_step` follows the estimator; a step that
+    cannot be told adds nothing (the others are still judged: scikit-learn fits them all)."""
+    found: list[tuple[Any, list[str]]] = []
+    todo: list[tuple[Any, list[str]]] = [(estimator, [])]
+    while todo and len(found) < 1000:  # a loop of references cannot hang the fit
+        est, path = todo.pop(0)
+        step = _first_step(est)
+        if step is None:
+            continue
+        parts = _parts_given_X(step) if len(path) < 20 else None
+        if parts is None:
+            found.append((step, path))
+        else:
+            todo.extend((part, [*path, type(step).__name__]) for part in parts)
+    return found
+
+
+def _refusing_step(estimator: Any) -> tuple[Any, str] | None:
+    """The first step given ``X`` as it is that takes 2-d input only (:func:`_takes_2d_only`),
+    with its name as the error says it ("StandardScaler in FeatureUnion"), or None."""
+    for step, path in _steps_given_X(estimator):
+        if _takes_2d_only(step):
+            name = type(step).__name__
+            return step, " in ".join([name, *reversed(path)])
     return None
 
 
@@ -152,10 +215,10 @@ def check_feature_input(X: Any, estimator: Any) -> None:
     ...
     ValueError: `X` must be 2-d, shape (n_samples, n_features), for LogisticRegression (scikit-learn refuses 1-d input); got a 1-d ndarray of 4 values. For a single feature pass X.reshape(-1, 1), a one-column DataFrame (series.to_frame()) or [[v] for v in X].
     """
-    step = _first_step(estimator)
-    if not _takes_2d_only(step):
+    refusing = _refusing_step(estimator)
+    if refusing is None:
         return
-    name = type(step).__name__
+    name = refusing[1]
     if _ndim(X) == 1:
         try:
             n = len(X)
