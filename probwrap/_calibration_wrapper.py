@@ -923,16 +923,27 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
 
         with np.errstate(over="ignore"):
             n_rows = float(count_weights(np.asarray(w, dtype=float))[0].sum())
+        return self._exact_zero_floor(clip, v.shape[1], zeros, v.shape[0], n_rows)
+
+    def _exact_zero_floor(self, clip: float, k: int, zeros: int, rows: int,
+                          n_rows: float) -> float:
+        """``clip_`` for ``k > 2`` classes with ``zeros`` exact zeros beside positive
+        probabilities below ``2e-12`` (nothing to go on): half the Krichevsky-Trofimov floor of ``n_rows``
+        held-out rows (weights on the row-count scale) where it lies above ``clip``, noted for
+        :meth:`_warn_zero_floor`. The in-memory fit and the Dask/Spark tally path
+        (probwrap.scale._multiclass_wrappers) share it."""
         if not 0.0 < n_rows < np.inf:
             return clip
-        floor = min(0.25, 0.25 / ((n_rows + 1.0) * (v.shape[1] - 1)))
+        floor = min(0.25, 0.25 / ((n_rows + 1.0) * (k - 1)))
         if floor <= clip:
             return clip
-        self._zero_floor = (zeros, v.shape[0], floor)
+        self._zero_floor = (zeros, rows, floor)
         return floor
 
-    def _warn_zero_floor(self) -> None:
+    def _warn_zero_floor(self, stacklevel: int = 3) -> None:
         """Once per fit: the held-out probabilities' exact zeros were floored at ``clip_``."""
+        from .calibration._base import ExactZeroFloorWarning
+
         found = self.__dict__.pop("_zero_floor", None)
         if found is None:
             return
@@ -944,8 +955,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             f"scaling, Platt and beta one-vs-rest) see every probability below {floor:.3g} as {floor:.3g} "
             "(clip_, from the number of held-out rows), at fit and at predict. Pass `clip=` "
             "to choose the floor yourself.",
-            UserWarning,
-            stacklevel=3,
+            ExactZeroFloorWarning,
+            stacklevel=stacklevel,
         )
 
     @staticmethod

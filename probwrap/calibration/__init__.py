@@ -1,6 +1,12 @@
 """Calibration maps (array core): fitted on held-out scores, they return probabilities."""
 
-from ._base import NONPARAMETRIC, CalibrationMap, FewClassRowsWarning, WeightScaleWarning
+from ._base import (
+    NONPARAMETRIC,
+    CalibrationMap,
+    ExactZeroFloorWarning,
+    FewClassRowsWarning,
+    WeightScaleWarning,
+)
 from ._beta import BetaMap
 from ._binning import BinningMap
 from ._identity import IdentityMap
@@ -18,6 +24,7 @@ __all__ = [
     "BinningMap",
     "CalibrationMap",
     "DEFAULT_CLIP",
+    "ExactZeroFloorWarning",
     "FewClassRowsWarning",
     "IdentityMap",
     "IsotonicMap",

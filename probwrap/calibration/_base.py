@@ -22,6 +22,7 @@ from .._validation import (
 
 __all__ = [
     "CalibrationMap",
+    "ExactZeroFloorWarning",
     "FewClassRowsWarning",
     "NONPARAMETRIC",
     "WeightScaleWarning",
@@ -39,6 +40,20 @@ class WeightScaleWarning(UserWarning):
     number of rows, a Venn-Abers test point of weight one) when ``sample_weight`` cannot be row
     frequencies because it sums to less than the number of rows it weights. The weights are
     then rescaled to sum to Kish's effective sample size (see :func:`count_weights`).
+    """
+
+
+class ExactZeroFloorWarning(UserWarning):
+    """A multiclass model's exact-zero probabilities were floored from the number of rows.
+
+    Raised once per fit by :class:`~probwrap.CalibrationWrapper` with ``clip=None`` when a
+    model of more than two classes gives held-out probabilities of exactly 0 beside positive
+    ones below ``2e-12`` (an isotonic-calibrated naive Bayes): half its smallest positive
+    probability says nothing about how small a zero is, so ``clip_`` is half the
+    Krichevsky-Trofimov (1981) floor of the ``N`` held-out rows, ``1 / (4 (N + 1) (k - 1))``,
+    at fit and at predict. In memory and on Dask or Spark rows alike. A subclass of
+    ``UserWarning``, so filters on ``UserWarning`` still catch it; pass ``clip=`` to choose
+    the floor yourself (no warning then).
     """
 
 

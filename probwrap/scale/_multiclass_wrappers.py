@@ -78,15 +78,62 @@ class _SharedFactor:
         return _SharedFactor(int(np.gcd(self.value, other.value)))
 
 
+class _ZeroCount:
+    """What the exact-zero floor of :meth:`probwrap.CalibrationWrapper._choose_clip` reads
+    from the rows of positive weight, added over blocks: their exact-zero probabilities, their
+    number, and their weights' largest value, sum and sum of squares (the last two divided by
+    that largest value and its square, so tiny or huge weights neither underflow nor overflow),
+    for the rows' count on the row-count scale as
+    :func:`probwrap.calibration._base.count_weights` reads it."""
+
+    def __init__(self, zeros: int = 0, rows: int = 0, top: float = 0.0, total: float = 0.0,
+                 squares: float = 0.0) -> None:
+        self.zeros, self.rows = int(zeros), int(rows)
+        self.top, self.total, self.squares = float(top), float(total), float(squares)
+
+    @classmethod
+    def of(cls, values: np.ndarray, w: np.ndarray) -> _ZeroCount:
+        keep = w > 0
+        if not keep.any():
+            return cls()
+        u = w[keep]
+        top = float(u.max())
+        u = u / top
+        return cls(int(np.count_nonzero(values[keep] == 0.0)), int(u.shape[0]), top,
+                   float(u.sum()), float(u @ u))
+
+    def __add__(self, other: _ZeroCount) -> _ZeroCount:
+        top = max(self.top, other.top)
+        if top <= 0:
+            return _ZeroCount(self.zeros + other.zeros, self.rows + other.rows)
+        a, b = self.top / top, other.top / top
+        return _ZeroCount(self.zeros + other.zeros, self.rows + other.rows, top,
+                          a * self.total + b * other.total,
+                          a * a * self.squares + b * b * other.squares)
+
+    def count_rows(self) -> float:
+        """The rows on the row-count scale: the weights' sum when it reaches the number of
+        rows, else Kish's (1965) effective size ``(sum w)**2 / sum w**2``."""
+        if self.rows == 0:
+            return 0.0
+        with np.errstate(over="ignore"):
+            total = self.top * self.total
+        if total >= self.rows:
+            return float(total)
+        return self.total**2 / self.squares
+
+
 class _Capped:
     """A block's model outputs, label indices and weights, concatenated in block order by
-    ``+`` while the rows number at most KEPT_ROWS (beyond: only the count and the smallest
-    positive probability travel on)."""
+    ``+`` while the rows number at most KEPT_ROWS (beyond: only the count, the smallest
+    positive probability and the exact zeros (:class:`_ZeroCount`) travel on)."""
 
-    def __init__(self, n: int, smallest: float, arrays: tuple | None) -> None:
+    def __init__(self, n: int, smallest: float, arrays: tuple | None,
+                 zeros: _ZeroCount | None = None) -> None:
         self.n = n
         self.smallest = smallest
         self.arrays = arrays
+        self.zeros = _ZeroCount() if zeros is None else zeros
 
     def __add__(self, other: _Capped) -> _Capped:
         from ._tally import KEPT_ROWS
@@ -96,16 +143,16 @@ class _Capped:
         if self.arrays is not None and other.arrays is not None and n <= KEPT_ROWS:
             arrays = tuple(np.concatenate([a, b]) for a, b in zip(self.arrays, other.arrays,
                                                                   strict=True))
-        return _Capped(n, min(self.smallest, other.smallest), arrays)
+        return _Capped(n, min(self.smallest, other.smallest), arrays, self.zeros + other.zeros)
 
     def without_rows_beyond(self, cap: int) -> _Capped:
         """This result without its rows when it holds more than ``cap`` of them."""
-        return self if self.n <= cap else _Capped(self.n, self.smallest, None)
+        return self if self.n <= cap else _Capped(self.n, self.smallest, None, self.zeros)
 
 
 def _first_pass_block(owner, Xb, yb, wb):
-    """The rows of a block (while few: see :class:`_Capped`) and the smallest non-zero
-    probability of its rows of positive weight."""
+    """The rows of a block (while few: see :class:`_Capped`), the smallest non-zero
+    probability of its rows of positive weight and their exact zeros."""
     from ._tally import KEPT_ROWS
 
     values = predict_block(owner.estimator_, owner.response_, Xb, owner.classes_.shape[0])
@@ -115,7 +162,7 @@ def _first_pass_block(owner, Xb, yb, wb):
     v = v[v > 0]
     n = values.shape[0]
     return _Capped(n, float(v.min()) if v.size else np.inf,
-                   (values, y, w) if n <= KEPT_ROWS else None)
+                   (values, y, w) if n <= KEPT_ROWS else None, _ZeroCount.of(values, w))
 
 
 def _temperature_terms(block, log_beta, total, counts=None):
@@ -170,6 +217,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
 
     from .._predictions import resolve_response
     from ..calibration._base import WeightScaleWarning, one_vs_rest_copy
+    from ..calibration._logodds import DEFAULT_CLIP
     from ..calibration._temperature import (
         _LOG_SPAN,
         TemperatureMap,
@@ -198,6 +246,14 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
             return _small_set_heldout(owner, estimator, classes, first.arrays,
                                       sample_weight is not None)
         owner.clip_ = owner._clip_from_smallest(first.smallest)
+        owner.__dict__.pop("_zero_floor", None)
+        if first.smallest < 2.0 * DEFAULT_CLIP and k >= 3 and first.zeros.zeros > 0:
+            # as in memory (CalibrationWrapper._choose_clip, session 28): exact zeros beside
+            # positive probabilities below 2e-12, half the Krichevsky-Trofimov floor of the
+            # rows, with the same warning (before session 29 this path kept 1e-12)
+            owner.clip_ = owner._exact_zero_floor(
+                owner.clip_, k, first.zeros.zeros, first.zeros.rows, first.zeros.count_rows())
+        owner._warn_zero_floor(stacklevel=5)
     else:
         owner.clip_ = owner._choose_clip(np.empty((0, k)), np.empty(0))
         if template is None:
