@@ -791,20 +791,39 @@ def _check_cutoff(cutoff: Any) -> float:
 
 
 def _cutoff_at_bin_edge(tally: Any, cutoff: float) -> float:
-    """Move a cutoff chosen on tally rows (Dask/Spark) to the edge between the bins it separates.
+    """Move a cutoff chosen on tally rows (Dask/Spark) out of any bin whose rows it would split.
 
     A tally row stands for every row of its bin, at the bin's mean score. A cutoff between two
-    representatives (the searched midpoints, or the plug-in cutoff the settling step keeps) can
-    still fall inside a bin, where some of the bin's rows are decided unlike its representative,
-    so the cost read from the tally would not be that of the rule ``predict`` applies. At the upper
-    edge of the last bin left unflagged the decisions of the tally rows are the same, and those of
-    every tallied row agree with their bin's.
+    representatives (the searched midpoints, or the anchor the settling step keeps) can still
+    fall among a bin's rows, where some of them are decided unlike its representative, so the
+    cost read from the tally would not be that of the rule ``predict`` applies
+    (``p > cutoff_``).
+
+    Where the tally carries each bin's smallest and largest output
+    (``ScoreTally.bin_output_range``, the wrappers' tallies since session 29) the cutoff keeps
+    its value unless some bin has rows on both sides of it; it then sits where the in-memory
+    fit of the same rows would put it whenever the search and the anchor agree (before, it
+    moved to a bin's edge on the score scale, which decided test rows inside the same gap
+    between held-out rows otherwise: docs/evidence/small_data_log.md, "Edge cases left open in
+    session 28"). A bin it splits is kept whole on its representative's side: the cutoff moves
+    to that bin's largest output (representative unflagged) or just below its smallest. Without
+    the outputs (a tally built from scores) the cutoff moves to the upper edge of the last bin
+    left unflagged, as before.
     """
     from scipy.special import expit
 
     reps = expit(tally.bin_scores)  # the tally rows' probabilities
-    edges = tally.bin_edges
     below = reps <= cutoff
+    span = getattr(tally, "bin_output_range", None)
+    if span is not None and span.shape == (reps.shape[0], 2):
+        split = (span[:, 0] <= cutoff) & (span[:, 1] > cutoff)
+        if not split.any():
+            return float(cutoff)
+        j = int(np.flatnonzero(split)[0])  # bins are disjoint on the score scale: one at most
+        if below[j]:
+            return float(span[j, 1])
+        return float(np.nextafter(span[j, 0], -np.inf))
+    edges = tally.bin_edges
     if below.all():
         return float(max(cutoff, expit(edges[:, 1].max())))
     if not below.any():

@@ -81,7 +81,8 @@ def warn_binned_small_set(owner: str, n_rows: int, resolution: float, reason: st
         f"{resolution:g} on the log-odds scale), not from the rows themselves as a set of at "
         f"most {KEPT_ROWS:,} rows is fitted in memory, because {reason}. Within a bin the rows' "
         "labels and weights are pooled, so the fit can differ from the in-memory fit of the "
-        "same rows (isotonic steps and a tuned cutoff move to bin edges; the small-set "
+        "same rows (isotonic steps move to bin edges, and a tuned cutoff does where it "
+        "would split a bin's rows; the small-set "
         "safeguards that need rows, such as method='auto' by cross-validation over rows, do "
         "not apply, and the recalibrated anchor of a tuned cutoff is fitted on the bins' "
         "cases with folds of its own, or not at all for weights that are not whole numbers). "
@@ -234,6 +235,14 @@ class ScoreTally:
     #: order, when the tally was built from a model's outputs on at most :data:`KEPT_ROWS` rows
     #: (by the wrappers' Dask and Spark paths); None otherwise.
     kept_rows: tuple | None = None
+
+    #: ``(m, 2)``: the smallest and largest model output of the rows of positive weight in each
+    #: bin, aligned with ``bins`` (the output the wrappers' binary decisions compare with a
+    #: cutoff: the second column of a model's ``predict_proba``), when the tally was built from
+    #: a model's two-column outputs (the wrappers' Dask and Spark paths); None otherwise (also for
+    #: tallies pickled before 5 December 2026). A tuned cutoff keeps its value where no bin's
+    #: rows lie on both sides of it (probwrap._cost_policy_rules._cutoff_at_bin_edge).
+    bin_output_range: np.ndarray | None = None
 
     def __init__(
         self,
@@ -504,6 +513,9 @@ class ScoreTally:
             _merge_factor(self.weight_factor, other.weight_factor), squares,
         )
         out.kept_rows = _merge_kept(self, other)
+        if a.bin_output_range is not None and b.bin_output_range is not None:
+            both = np.concatenate([a.bin_output_range, b.bin_output_range])
+            out.bin_output_range = _output_range(both[:, 0], both[:, 1], inv, m)
         return out
 
     def _in_unit(self, unit: float) -> ScoreTally:
@@ -519,11 +531,14 @@ class ScoreTally:
         sq = None if self.squared_weight is None else float(np.ldexp(self.squared_weight, 2 * shift))
         squares = (None if self.squared_counts is None
                    else np.ldexp(self.squared_counts, 2 * shift)[keep])
-        return ScoreTally(
+        out = ScoreTally(
             self.bins[keep], counts[keep], np.ldexp(self.score_sums, shift)[keep],
             self.resolution, self.n_rows, self.labelled, reps, sq, unit, self.rows_by_label,
             self.weighted_rows_by_label, self.weight_factor, squares,
         )
+        if self.bin_output_range is not None:
+            out.bin_output_range = self.bin_output_range[keep]
+        return out
 
     __add__ = merge
 
@@ -574,6 +589,16 @@ def _merge_kept(a: ScoreTally, b: ScoreTally) -> tuple | None:
     return values, labels, weights
 
 
+def _output_range(low: np.ndarray, high: np.ndarray, idx: np.ndarray, m: int) -> np.ndarray:
+    """``(m, 2)``: the smallest of ``low`` and the largest of ``high`` for each index of
+    ``idx`` (``inf``, ``-inf`` where none)."""
+    out = np.empty((m, 2))
+    out[:, 0], out[:, 1] = np.inf, -np.inf
+    np.minimum.at(out[:, 0], idx, low)
+    np.maximum.at(out[:, 1], idx, high)
+    return out
+
+
 def _add_counts(a: np.ndarray | None, b: np.ndarray | None) -> np.ndarray | None:
     return None if a is None or b is None else a + b
 
@@ -620,6 +645,7 @@ def _tally_block(
         )
         if outputs is not None:
             empty.kept_rows = (np.asarray(outputs, dtype=float), None, None)
+            empty.bin_output_range = np.empty((0, 2))
         return empty
     if y is not None:
         y_arr = np.asarray(y)
@@ -701,6 +727,12 @@ def _tally_block(
         bins, counts[occupied], sums[occupied], resolution, n, y is not None, reps,
         float(np.dot(w, w)), unit, rows, weighted, factor, squares[occupied],
     )
+    if outputs is not None:
+        o = np.asarray(outputs, dtype=float)
+        if o.ndim == 2 and o.shape == (n, 2):
+            # each bin's smallest and largest output of its rows of positive weight
+            pos = w > 0
+            out.bin_output_range = _output_range(o[pos, 1], o[pos, 1], idx[pos], m)[occupied]
     if outputs is not None and n <= KEPT_ROWS:
         out.kept_rows = (
             np.asarray(outputs, dtype=float),
