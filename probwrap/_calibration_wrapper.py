@@ -940,7 +940,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         self._zero_floor = (zeros, rows, floor)
         return floor
 
-    def _warn_zero_floor(self, stacklevel: int = 3) -> None:
+    def _warn_zero_floor(self, stacklevel: int = 4) -> None:
         """Once per fit: the held-out probabilities' exact zeros were floored at ``clip_``."""
         from .calibration._base import ExactZeroFloorWarning
 

@@ -253,7 +253,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
             # rows, with the same warning (before session 29 this path kept 1e-12)
             owner.clip_ = owner._exact_zero_floor(
                 owner.clip_, k, first.zeros.zeros, first.zeros.rows, first.zeros.count_rows())
-        owner._warn_zero_floor(stacklevel=5)
+        owner._warn_zero_floor(stacklevel=6)
     else:
         owner.clip_ = owner._choose_clip(np.empty((0, k)), np.empty(0))
         if template is None:
