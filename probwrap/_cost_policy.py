@@ -29,6 +29,7 @@ from ._heldout import (
     is_frozen,
     warn_weightless_classes,
 )
+from ._predictions import _answers
 from ._validation import (
     check_labels,
     check_sample_weight,
@@ -338,7 +339,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         y_index, classes = check_labels(y_arr, name="y")
         if sw is not None:
             warn_weightless_classes(self, classes, y_index, sw, stacklevel=3)
-        if not hasattr(self.estimator, "predict_proba"):
+        if not _answers(self.estimator, "predict_proba"):
             raise ValueError(
                 f"`estimator` ({type(self.estimator).__name__}) has no predict_proba; wrap it in "
                 "CalibrationWrapper, which turns decision_function scores into probabilities."

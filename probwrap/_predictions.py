@@ -94,11 +94,42 @@ class HeldOutPredictions:
                            minlength=len(self.classes)).astype(np.int64)
 
 
+def _answers(estimator: Any, method: str) -> bool:
+    """Whether ``estimator`` (fitted or not) will have ``method`` once fitted.
+
+    ``hasattr`` answers that for every scikit-learn model but one case: an unfitted
+    ``StackingClassifier`` left with its default ``final_estimator=None`` (alone, as a pipeline's
+    last step or inside a search) reports neither ``predict_proba`` nor ``decision_function``,
+    since it asks its final model, which is only made (a ``LogisticRegression``, scikit-learn's
+    documented default) at fit. scikit-learn's own ``CalibratedClassifierCV`` refuses such a
+    model for that reason; the wrappers ask the default final model instead.
+    """
+    if hasattr(estimator, method):
+        return True
+    from sklearn.ensemble import StackingClassifier
+    from sklearn.pipeline import Pipeline
+
+    inner = estimator
+    for _ in range(8):  # through pipelines and searches, as hasattr itself looks
+        if isinstance(inner, Pipeline) and inner.steps:
+            inner = inner.steps[-1][1]
+        elif hasattr(inner, "param_grid") or hasattr(inner, "param_distributions"):
+            inner = getattr(inner, "estimator", None)
+        else:
+            break
+    if (isinstance(inner, StackingClassifier) and inner.final_estimator is None
+            and not hasattr(inner, "final_estimator_")):
+        from sklearn.linear_model import LogisticRegression
+
+        return hasattr(LogisticRegression(), method)
+    return False
+
+
 def resolve_response(estimator: Any, response: str) -> str:
     if response not in _RESPONSES:
         raise ValueError(f"`response` must be one of {_RESPONSES}; got {plain(response)!r}.")
-    has_proba = hasattr(estimator, "predict_proba")
-    has_decision = hasattr(estimator, "decision_function")
+    has_proba = _answers(estimator, "predict_proba")
+    has_decision = _answers(estimator, "decision_function")
     if response == "auto":
         if has_proba:
             return "predict_proba"
