@@ -230,11 +230,11 @@ def _null_harm_scale_moments(
 
 
 class NoShiftHarmWarning(UserWarning):
-    """``adapt`` found evidence that a draw with no shift gives often (shift test p >= 0.05),
-    and, were the class shares in fact unchanged, the move its evidence rule asks for would
-    raise the log loss of these rows by more than 2 % (see :func:`null_move_ratio`). Where
-    p >= 0.10 and ``max_harm`` is set (the default) the move was held to that 2 %
-    (:func:`draw_capped_weight`); with ``max_harm=None``, or where 0.05 <= p < 0.10, it was
+    """``adapt`` found evidence that a draw with no shift gives often enough (shift test
+    p >= 0.01), and, were the class shares in fact unchanged, the move its evidence rule asks
+    for would raise the log loss of these rows by more than 2 % (see :func:`null_move_ratio`).
+    Where p >= 0.10 and ``max_harm`` is set (the default) the move was held to that 2 %
+    (:func:`draw_capped_weight`); with ``max_harm=None``, or where 0.01 <= p < 0.10, it was
     made in full."""
 
 
