@@ -33,7 +33,7 @@ summed gap to the oracle closed on shifted cells.
 Run: nice python benchmarks/shift_false_rejection_rules.py --out F.csv [--n 40 150]
                                                     [--seeds 1 2] [--which 27|28|both]
      nice python benchmarks/shift_false_rejection_rules.py --summary F.csv [G.csv ...]
-(seeds 1-2, 40 and 150 labelled rows, both set lists: about 2,300 cells, ~20 minutes on one
+(seeds 1-2, 40 and 150 labelled rows, both set lists: 3,952 cells, about 26 minutes as one
 nice'd process). Results: docs/evidence/prior_shift_log.md, "Quiet false rejections between
 p = 0.01 and 0.05 (session 29)".
 """
@@ -208,7 +208,7 @@ def summary(df: pd.DataFrame) -> None:
     gap = 1.0 - df.r_oracle_none.to_numpy()
     r0 = df.r_none.to_numpy()
     print(f"{len(df)} cells ({int(no.sum())} without a shift), {df.set.nunique()} sets, "
-          f"seeds {sorted(df.seed.unique())}, labelled sizes up to {df.n_lab.max()}")
+          f"seeds {sorted(int(v) for v in df.seed.unique())}, labelled sizes up to {df.n_lab.max()}")
     for name, rule in RULES.items():
         out = [rule(r) for r in df.itertuples()]
         w = np.array([o[0] for o in out])
