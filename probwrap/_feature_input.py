@@ -12,7 +12,8 @@ its end:
 * a DataFrame with duplicate column names: refused by newer scikit-learn (1.9.1: its
   feature-name check reads the columns through narwhals, "Expected unique column names");
   scikit-learn 1.6.1 accepts them, so they are refused here only where the installed
-  scikit-learn's own check (``_get_feature_names``) refuses them.
+  scikit-learn refuses them (found once, by fitting a ``StandardScaler`` on a 2-column frame
+  with one name twice: :func:`_sklearn_refuses_repeated_names`).
 
 :func:`check_feature_input` raises a short error naming ``X`` and what was expected, but only
 where a step that receives ``X`` as it is given is a scikit-learn estimator that takes 2-d input
@@ -27,6 +28,8 @@ cannot be told) gets ``X`` as before.
 
 from __future__ import annotations
 
+import functools
+import warnings
 from typing import Any
 
 import numpy as np
@@ -175,15 +178,25 @@ def _duplicate_names(X: Any) -> list:
     return list(dict.fromkeys(plain(c) for c in repeated.tolist()))
 
 
-def _sklearn_refuses_names(X: Any) -> bool:
-    """Whether the installed scikit-learn's feature-name check refuses ``X``'s columns (1.9.1
-    does for duplicate names; 1.6.1 does not)."""
+@functools.lru_cache(maxsize=1)
+def _sklearn_refuses_repeated_names() -> bool:
+    """Whether the installed scikit-learn refuses a pandas DataFrame with repeated column names
+    (1.9.1 does, "Expected unique column names"; 1.6.1 does not).
+
+    Found once per process by its public behaviour: a ``StandardScaler`` fitted on a 2 x 2
+    frame whose two columns share one name (the feature-name check every scikit-learn estimator
+    runs in ``fit``). Without pandas there is no such frame to refuse: False.
+    """
     try:
-        from sklearn.utils.validation import _get_feature_names
+        import pandas as pd
+        from sklearn.preprocessing import StandardScaler
     except ImportError:
         return False
+    frame = pd.DataFrame([[0.0, 1.0], [1.0, 0.0]], columns=["a", "a"])
     try:
-        _get_feature_names(X)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            StandardScaler().fit(frame)
     except Exception as exc:  # noqa: BLE001 - narwhals' DuplicateError is a ValueError subclass
         return "unique" in str(exc) or "uplicate" in str(exc)
     return False
@@ -232,7 +245,7 @@ def check_feature_input(X: Any, estimator: Any) -> None:
             "(series.to_frame()) or [[v] for v in X]."
         )
     repeated = _duplicate_names(X)
-    if repeated and _sklearn_refuses_names(X):
+    if repeated and _sklearn_refuses_repeated_names():
         shown = ", ".join(repr(c) for c in repeated[:5])
         more = f" and {len(repeated) - 5} more" if len(repeated) > 5 else ""
         raise ValueError(
