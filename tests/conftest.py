@@ -312,3 +312,41 @@ def spark():
     session.sparkContext.setLogLevel("ERROR")
     yield session
     session.stop()
+
+
+@pytest.fixture
+def no_progress_lines(monkeypatch):
+    """In-process command-line runs: no progress lines, however slow the machine (the progress
+    lines are tested on their own). Modules ask for it with
+    ``pytestmark = pytest.mark.usefixtures("no_progress_lines")``."""
+    import probwrap.cli._progress as progress
+
+    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+
+
+@pytest.fixture(scope="module")
+def star98_districts():
+    """A logistic regression fitted on 150 districts' pupils (weights), and 40 other districts
+    as a count table: a row of pupils above the median and one below per district
+    (statsmodels' bundled star98 set; tests/test_count_table_dispersion.py and
+    tests/test_prior_shift_count_dispersion.py). Returns the model, the table ``(X, y, weights)``
+    and the 40 districts' counts above the median and tested."""
+    sm = pytest.importorskip("statsmodels.api")
+    import numpy as np
+    from sklearn.linear_model import LogisticRegression
+
+    d = sm.datasets.star98.load_pandas()
+    k = d.endog["NABOVE"].to_numpy(float)
+    n = (d.endog["NABOVE"] + d.endog["NBELOW"]).to_numpy(float)
+    X = d.exog.to_numpy(float)
+    X = (X - X.mean(axis=0)) / X.std(axis=0)
+    idx = np.random.default_rng(0).permutation(k.shape[0])
+    fit, cal = idx[:150], idx[150:190]
+
+    def table(rows):
+        return (np.repeat(X[rows], 2, axis=0), np.tile([1, 0], rows.shape[0]),
+                np.column_stack([k[rows], n[rows] - k[rows]]).ravel())
+
+    Xf, yf, wf = table(fit)
+    model = LogisticRegression(max_iter=5000).fit(Xf, yf, sample_weight=wf)
+    return model, table(cal), k[cal], n[cal]

@@ -14,15 +14,10 @@ import pytest
 from sklearn.datasets import load_breast_cancer
 from sklearn.linear_model import LogisticRegression
 
-from probwrap.cli import main
+from _cli_helpers import run_cli as run
 from probwrap.cli._tables import read_table
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")
@@ -30,12 +25,6 @@ def scores():
     X, y = load_breast_cancer(return_X_y=True)
     model = LogisticRegression(max_iter=5000).fit(X[:200], y[:200])
     return model.predict_proba(X[200:])[:, 1], y[200:]
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def _one_column(path, values, blank_after=None, trailing=0):

@@ -12,14 +12,7 @@ from probwrap.cli import main
 from probwrap.datasets import make_parcels
 from probwrap.decision import search_cutoff
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
-    import probwrap.cli._progress as common
-
-    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
-
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 class _Figures(html.parser.HTMLParser):

@@ -17,22 +17,12 @@ import json
 import numpy as np
 import pytest
 
-from probwrap.cli import main
+from _cli_helpers import run_cli as run
 
 pd = pytest.importorskip("pandas")
 
 
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")

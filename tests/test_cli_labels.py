@@ -14,17 +14,10 @@ import pandas as pd
 import pytest
 from sklearn.metrics import roc_auc_score
 
-from probwrap.cli import main
+from _cli_helpers import run_cli as run
 from probwrap.decision import search_cutoff
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
-    import probwrap.cli._progress as common
-
-    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
-
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")
@@ -38,12 +31,6 @@ def text_files(tmp_path_factory):
     frame.to_csv(root / "held.csv", index=False)
     frame.to_parquet(root / "held.parquet")
     return root, p, y
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 @pytest.mark.parametrize("verb", ["cutoff", "calibrate", "report", "prevalence"])

@@ -14,24 +14,12 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from _cli_helpers import run_cli as run
 from probwrap.cli import build_parser, join_negative_values, main
 from probwrap.cli._common import MIN_RESAMPLES
 from probwrap.cli._tables import numeric_column, read_table
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
-    import probwrap.cli._progress as common
-
-    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
-
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 def usage_error(capsys, *argv):

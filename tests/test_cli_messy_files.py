@@ -18,20 +18,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from probwrap.cli import main
+from _cli_helpers import run_cli as run
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as common
-
-    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")

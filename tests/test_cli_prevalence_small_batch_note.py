@@ -25,11 +25,7 @@ from probwrap.shift import cusum_run_length, em_prior
 BATCH = 250
 
 
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as common
-
-    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 def _calibrated_for_source(n, prevalence, seed, src):

@@ -14,14 +14,10 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from _cli_helpers import run_cli as run
 from probwrap.cli import main
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")
@@ -44,12 +40,6 @@ def files(tmp_path_factory):
     ref.assign(big=ref.freq * 1000.0).to_csv(root / "ref_scaled.csv", index=False)
     new.loc[new.index.repeat(new.freq.astype(int))].to_csv(root / "expanded.csv", index=False)
     return root, ref, new
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def _source(capsys, path, *extra, prevalence=0.3):

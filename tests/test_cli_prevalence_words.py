@@ -19,7 +19,7 @@ import pytest
 from scipy.special import expit
 from sklearn.datasets import load_breast_cancer
 
-from probwrap.cli import main
+from _cli_helpers import run_cli as _run
 from probwrap.cli._wording import cli_wording
 from probwrap.shift import em_prior
 from probwrap.shift._confusion import _not_identified
@@ -28,17 +28,7 @@ from probwrap.shift._confusion import _not_identified
 _PRIOR = re.compile(r"\bpriors?\b(?![- ]shift)", flags=re.IGNORECASE)
 
 
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
-
-
-def _run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 def _library_messages() -> list[str]:

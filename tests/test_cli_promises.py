@@ -15,6 +15,7 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 
+from _cli_helpers import run_cli as run
 from probwrap.calibration import map_from_dict
 from probwrap.cli import main
 from probwrap.cli._calibrate import fit_map, to_log_odds
@@ -26,11 +27,7 @@ from probwrap.report._alarm_chart import batch_alarm
 MATRIX = np.array([[0.0, 3.0], [40.0, 0.0]])
 
 
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as common
-
-    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")
@@ -54,12 +51,6 @@ def files(tmp_path_factory):
 
 
 LATE = ("--time-column", "days", "--event-column", "claimed", "--horizon", 30)
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def test_cutoff_with_late_labels_equals_the_weighted_search(files, capsys):

@@ -15,39 +15,26 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
-from sklearn.datasets import load_breast_cancer
 from sklearn.linear_model import LogisticRegression
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
+from _cli_helpers import cancer_held_out
+from _cli_helpers import run_cli as run
 from probwrap.cli import main
 
 CALIBRATION_WORDS = "Calibrated scores move less than the prevalence does"
 
 
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")
 def cancer():
-    X, y = load_breast_cancer(return_X_y=True)
-    order = np.random.default_rng(0).permutation(y.size)
-    fit, held = order[:280], order[280:]
-    model = make_pipeline(StandardScaler(), LogisticRegression(C=0.1)).fit(X[fit], y[fit])
+    p, y = cancer_held_out()
     rng = np.random.default_rng(1)
-    return pd.DataFrame({"lr": model.predict_proba(X[held])[:, 1], "y": y[held],
-                         "w": np.round(rng.uniform(0.5, 3.0, held.size), 1),
-                         "days": np.round(rng.uniform(1.0, 60.0, held.size), 1)})
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
+    return pd.DataFrame({"lr": p, "y": y, "w": np.round(rng.uniform(0.5, 3.0, y.size), 1),
+                         "days": np.round(rng.uniform(1.0, 60.0, y.size), 1)})
 
 
 def _cutoff(capsys, path, *extra):

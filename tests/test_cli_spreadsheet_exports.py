@@ -13,35 +13,17 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
-from sklearn.datasets import load_breast_cancer
-from sklearn.linear_model import LogisticRegression
-from sklearn.pipeline import make_pipeline
-from sklearn.preprocessing import StandardScaler
 
-from probwrap.cli import main
+from _cli_helpers import cancer_held_out
+from _cli_helpers import run_cli as run
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")
 def cancer():
-    X, y = load_breast_cancer(return_X_y=True)
-    order = np.random.default_rng(0).permutation(y.size)
-    fit, held = order[:280], order[280:]
-    model = make_pipeline(StandardScaler(), LogisticRegression(C=0.1)).fit(X[fit], y[fit])
-    return pd.DataFrame({"id": np.arange(held.size), "score": np.round(
-        model.predict_proba(X[held])[:, 1], 6), "y": y[held]})
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
+    p, y = cancer_held_out()
+    return pd.DataFrame({"id": np.arange(y.size), "score": np.round(p, 6), "y": y})
 
 
 def _cutoff(capsys, path, *extra):

@@ -29,17 +29,14 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from _cli_helpers import run_cli as run
 from probwrap.calibration import map_from_dict, proba_to_log_odds
 from probwrap.cli import main
 
 ROOT = Path(__file__).resolve().parents[1]
 
 
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")
@@ -66,12 +63,6 @@ def files(tmp_path_factory):
 
 def _feed(monkeypatch, data: bytes) -> None:
     monkeypatch.setattr(sys, "stdin", io.TextIOWrapper(io.BytesIO(data)))
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def _cutoff(capsys, path, *extra):

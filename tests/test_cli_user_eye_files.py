@@ -25,21 +25,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from _cli_helpers import run_cli as run
 from probwrap.cli import main
 from probwrap.cli._wording import cli_wording
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 def _cross_validated(X, y):

@@ -14,15 +14,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from _cli_helpers import run_cli as run
 from probwrap.cli import main
 from probwrap.cli._prevalence import prevalence_from_source
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")
@@ -35,12 +31,6 @@ def default_scores():
     y = (d.default == "Yes").to_numpy(int)
     model = LogisticRegression(max_iter=5000).fit(X[:5000], y[:5000])
     return model.predict_proba(X[5000:8000])[:, 1], y[5000:8000]
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def test_python_dash_m_probwrap_runs_the_command_line():

@@ -16,6 +16,7 @@ import pytest
 from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 
+from _cli_helpers import run_cli as run
 from probwrap import CalibrationWrapper
 from probwrap.calibration import IsotonicMap, map_from_dict, proba_to_log_odds
 from probwrap.cli import main
@@ -23,13 +24,7 @@ from probwrap.datasets import make_parcels
 from probwrap.decision import cutoff_interval, search_cutoff
 from probwrap.shift import PriorEstimator, em_prior, shift_test
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
-    import probwrap.cli._progress as common
-
-    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 COSTS = {"fp": 3.0, "fn": 40.0}
@@ -52,12 +47,6 @@ def files(tmp_path_factory):
     )
     return {"root": root, "model": model, "held": held, "p_held": p_held,
             "p_winter": model.predict_proba(winter.data)[:, 1]}
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 # -- calibrate ---------------------------------------------------------------------------------

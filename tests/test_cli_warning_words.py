@@ -21,11 +21,7 @@ LIBRARY_ONLY = ("`clip`", "docstring", "prior_strength", "max_iter", "`sample_we
                 "BetaMap", "CalibrationWrapper", "guaranteed_cutoff")
 
 
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")

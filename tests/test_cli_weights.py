@@ -13,14 +13,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from probwrap.cli import main
+from _cli_helpers import run_cli as run
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")
@@ -41,12 +36,6 @@ def files(tmp_path_factory):
     frame.to_csv(root / "w.csv", index=False)
     frame.loc[frame.index.repeat(frame.freq)].to_csv(root / "expanded.csv", index=False)
     return root, frame
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def _cutoff(capsys, path, *extra):

@@ -24,13 +24,7 @@ from probwrap.cli import main
 from probwrap.cli._common import DataError
 from probwrap.cli._files import write_atomic, write_text
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    """In-process runs: no progress lines, however slow the machine (tested on their own)."""
-    import probwrap.cli._progress as common
-
-    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 posix_only = pytest.mark.skipif(os.name != "posix", reason="POSIX signals and resource limits")

@@ -19,7 +19,6 @@ import numpy as np
 import pytest
 from scipy.special import logit
 from sklearn.frozen import FrozenEstimator
-from sklearn.linear_model import LogisticRegression
 
 from probwrap import CalibrationWrapper, CostPolicyWrapper
 from probwrap._weights import table_dispersion
@@ -27,29 +26,8 @@ from probwrap._weights import table_dispersion
 sm = pytest.importorskip("statsmodels.api")
 
 
-@pytest.fixture(scope="module")
-def star98():
-    """A logistic regression fitted on 150 districts' pupils (weights), and 40 other districts
-    as a count table: a row of pupils above the median and one below per district."""
-    d = sm.datasets.star98.load_pandas()
-    k = d.endog["NABOVE"].to_numpy(float)
-    n = (d.endog["NABOVE"] + d.endog["NBELOW"]).to_numpy(float)
-    X = d.exog.to_numpy(float)
-    X = (X - X.mean(axis=0)) / X.std(axis=0)
-    idx = np.random.default_rng(0).permutation(k.shape[0])
-    fit, cal = idx[:150], idx[150:190]
-
-    def table(rows):
-        return (np.repeat(X[rows], 2, axis=0), np.tile([1, 0], rows.shape[0]),
-                np.column_stack([k[rows], n[rows] - k[rows]]).ravel())
-
-    Xf, yf, wf = table(fit)
-    model = LogisticRegression(max_iter=5000).fit(Xf, yf, sample_weight=wf)
-    return model, table(cal), k[cal], n[cal]
-
-
-def test_dispersion_is_statsmodels_pearson_over_residual_dof(star98):
-    model, (Xt, yt, wt), k, n = star98
+def test_dispersion_is_statsmodels_pearson_over_residual_dof(star98_districts):
+    model, (Xt, yt, wt), k, n = star98_districts
     p = model.predict_proba(Xt)[:, 1]
     dispersion, pvalue, groups = table_dispersion(p, yt, wt, np.repeat(np.arange(40), 2))
     glm = sm.GLM(np.column_stack([k, n - k]), sm.add_constant(logit(p[::2])),
@@ -59,8 +37,8 @@ def test_dispersion_is_statsmodels_pearson_over_residual_dof(star98):
     assert dispersion > 10 and pvalue < 1e-50
 
 
-def test_auto_and_tuned_cutoff_warn_on_star98(star98):
-    model, (Xt, yt, wt), _, _ = star98
+def test_auto_and_tuned_cutoff_warn_on_star98(star98_districts):
+    model, (Xt, yt, wt), _, _ = star98_districts
     for make in (lambda: CalibrationWrapper(FrozenEstimator(model), method="auto",
                                             random_state=0),
                  lambda: CostPolicyWrapper(FrozenEstimator(model), costs={"fp": 1, "fn": 3},
@@ -72,11 +50,11 @@ def test_auto_and_tuned_cutoff_warn_on_star98(star98):
         assert len(said) == 1 and "40 groups" in said[0]
 
 
-def test_no_warning_for_binomial_groups_or_relative_weights(star98):
+def test_no_warning_for_binomial_groups_or_relative_weights(star98_districts):
     """The same districts with their pupils redrawn binomially around the model's probabilities
     (the check's null: no warning), and the star98 table divided by its sum (relative weights:
     its rows count by Kish's size, no case is counted, no warning)."""
-    model, (Xt, yt, wt), _, n = star98
+    model, (Xt, yt, wt), _, n = star98_districts
     p = model.predict_proba(Xt)[::2, 1]
     redrawn = np.random.default_rng(5).binomial(n.astype(int), p)
     w_null = np.column_stack([redrawn, n - redrawn]).ravel().astype(float)

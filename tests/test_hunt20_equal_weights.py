@@ -27,12 +27,7 @@ from sklearn.model_selection import StratifiedKFold, cross_val_predict
 from probwrap._heldout import feature_cells
 from probwrap.cli import main
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")

@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from probwrap.cli import main
+from _cli_helpers import run_cli as run
 
 
 @pytest.fixture(scope="module")
@@ -36,12 +36,6 @@ def nodal_scores(tmp_path_factory):
     path = tmp_path_factory.mktemp("nodal") / "nodal.csv"
     pd.DataFrame({"risk": p, "nodes": y}).to_csv(path, index=False)
     return path, p, y
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 @pytest.mark.parametrize("verb", ["prevalence", "cutoff", "calibrate"])

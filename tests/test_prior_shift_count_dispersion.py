@@ -19,34 +19,12 @@ import numpy as np
 import pytest
 from scipy.special import logit
 from sklearn.frozen import FrozenEstimator
-from sklearn.linear_model import LogisticRegression
 
 from probwrap import PriorShiftWrapper
 
 sm = pytest.importorskip("statsmodels.api")
 
 SAID = "vary more than binomial"
-
-
-@pytest.fixture(scope="module")
-def star98():
-    """A logistic regression fitted on 150 districts' pupils (weights), and 40 other districts
-    as a count table: a row of pupils above the median and one below per district."""
-    d = sm.datasets.star98.load_pandas()
-    k = d.endog["NABOVE"].to_numpy(float)
-    n = (d.endog["NABOVE"] + d.endog["NBELOW"]).to_numpy(float)
-    X = d.exog.to_numpy(float)
-    X = (X - X.mean(axis=0)) / X.std(axis=0)
-    idx = np.random.default_rng(0).permutation(k.shape[0])
-    fit, cal = idx[:150], idx[150:190]
-
-    def table(rows):
-        return (np.repeat(X[rows], 2, axis=0), np.tile([1, 0], rows.shape[0]),
-                np.column_stack([k[rows], n[rows] - k[rows]]).ravel())
-
-    Xf, yf, wf = table(fit)
-    model = LogisticRegression(max_iter=5000).fit(Xf, yf, sample_weight=wf)
-    return model, table(cal), k[cal], n[cal]
 
 
 def _said(X, y, w, model, **fit_kw):
@@ -57,8 +35,8 @@ def _said(X, y, w, model, **fit_kw):
     return [c for c in caught if SAID in str(c.message)]
 
 
-def test_star98_districts_warn_once(star98):
-    model, (Xt, yt, wt), k, n = star98
+def test_star98_districts_warn_once(star98_districts):
+    model, (Xt, yt, wt), k, n = star98_districts
     said = _said(Xt, yt, wt, model)
     assert len(said) == 1
     text = str(said[0].message)
@@ -75,19 +53,19 @@ def test_star98_districts_warn_once(star98):
     assert f"Pearson dispersion {glm.pearson_chi2 / glm.df_resid:.3g}" in text
     assert f"Pearson dispersion {glm.pearson_chi2 / glm.df_resid:.3g}" in text
 
-def test_star98_with_cells_does_not_warn(star98):
+def test_star98_with_cells_does_not_warn(star98_districts):
     """With the districts as ``cells`` the interval and shift test count districts (the
     clustered reading): nothing counted as independent pupils, no warning."""
-    model, (Xt, yt, wt), _, _ = star98
+    model, (Xt, yt, wt), _, _ = star98_districts
     said = _said(Xt, yt, wt, model, cells=np.repeat(np.arange(40), 2))
     assert not said
 
 
-def test_binomial_redraw_relative_weights_and_unit_weights_do_not_warn(star98):
+def test_binomial_redraw_relative_weights_and_unit_weights_do_not_warn(star98_districts):
     """The same districts with their pupils redrawn binomially around the model's probabilities
     (the check's null), the star98 table divided by its sum (relative weights: Kish's reading,
     no case counted), and the rows without weights."""
-    model, (Xt, yt, wt), _, n = star98
+    model, (Xt, yt, wt), _, n = star98_districts
     p = model.predict_proba(Xt)[::2, 1]
     redrawn = np.random.default_rng(5).binomial(n.astype(int), p)
     w_null = np.column_stack([redrawn, n - redrawn]).ravel().astype(float)

@@ -21,17 +21,12 @@ import pytest
 from scipy.special import expit
 from sklearn.datasets import load_iris
 
-from probwrap.cli import main
+from _cli_helpers import run_cli as _run
 from probwrap.metrics import bootstrap_interval, calibration_slope_intercept
 from probwrap.metrics._bootstrap import MAX_DROPPED_SHARE
 from probwrap.report import collect_content
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 def _iris_petal_width():
@@ -103,12 +98,6 @@ def test_report_keeps_the_interval_and_counts_a_few_dropped():
     row = _slope_row(content)
     assert 0 < row.dropped_resamples <= MAX_DROPPED_SHARE * 200
     assert row.interval_note is None and row.low < row.value < row.high
-
-
-def _run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 @pytest.mark.parametrize("case", ["iris", "spector"])

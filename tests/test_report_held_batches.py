@@ -36,11 +36,7 @@ from probwrap.shift._by_batch import held_near_source
 MARK = re.compile(r"kept near source \(rows alone ([01]\.\d{4})\)")
 
 
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as common
-
-    monkeypatch.setattr(common, "PROGRESS_DELAY", 1e9)
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 @pytest.fixture(scope="module")

@@ -193,13 +193,6 @@ def test_a_given_prior_shift_wrapper_takes_unlabelled_cells_only_for_its_batches
     np.testing.assert_allclose(content.batch_table["n_effective"], 10.0, rtol=1e-9)
 
 
-@pytest.fixture
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
-
-
 def _cli(tmp_path, s, extra, capsys):
     import json
 
@@ -219,7 +212,7 @@ def _cli(tmp_path, s, extra, capsys):
     return code, json.loads(capsys.readouterr().out) if code == 0 else None
 
 
-def test_command_line_unlabelled_cell_column(tmp_path, star98, capsys, _no_progress_lines):
+def test_command_line_unlabelled_cell_column(tmp_path, star98, capsys, no_progress_lines):
     s = star98
     code, with_cells = _cli(tmp_path, s, ["--unlabelled-cell-column", "district"], capsys)
     assert code == 0
@@ -237,7 +230,7 @@ def test_command_line_unlabelled_cell_column(tmp_path, star98, capsys, _no_progr
 
 
 def test_command_line_unlabelled_cell_column_needs_its_file(tmp_path, star98, capsys,
-                                                           _no_progress_lines):
+                                                           no_progress_lines):
     from probwrap.cli import main
 
     s = star98
@@ -252,7 +245,7 @@ def test_command_line_unlabelled_cell_column_needs_its_file(tmp_path, star98, ca
 
 
 def test_command_line_class_columns_take_unlabelled_cells(tmp_path, capsys,
-                                                          _no_progress_lines):
+                                                          no_progress_lines):
     import json
 
     import pandas as pd
