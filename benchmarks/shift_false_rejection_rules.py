@@ -187,17 +187,19 @@ def _repeat_cap(row):
     return row.w, False
 
 
-RULES = {"current": lambda row: (row.w, False),
-         "fade cap t^1": _fade(1.0), "fade cap t^0.5": _fade(0.5),
-         "limit 2%*(0.05/p)^1": _limit(1.0), "limit 2%*(0.05/p)^2": _limit(2.0),
-         "limit 2%*(0.05/p)^3": _limit(3.0),
-         "warn, harm > 2%": _warn(0.02), "warn, harm > 5%": _warn(0.05),
-         "warn, harm > 10%": _warn(0.10),
-         "refit repeat cap": _repeat_cap}
+def rules() -> dict:
+    """The rules scored, by name (built on call: the guard test allows no work at import)."""
+    return {"current": lambda row: (row.w, False),
+            "fade cap t^1": _fade(1.0), "fade cap t^0.5": _fade(0.5),
+            "limit 2%*(0.05/p)^1": _limit(1.0), "limit 2%*(0.05/p)^2": _limit(2.0),
+            "limit 2%*(0.05/p)^3": _limit(3.0),
+            "warn, harm > 2%": _warn(0.02), "warn, harm > 5%": _warn(0.05),
+            "warn, harm > 10%": _warn(0.10),
+            "refit repeat cap": _repeat_cap}
 
 
 def summary(df: pd.DataFrame) -> None:
-    """Score every rule of ``RULES`` on the saved cells."""
+    """Score every rule of ``rules()`` on the saved cells."""
     df = df.reset_index(drop=True)
     df["warn"] = df.warn.fillna("")
     grid = df[[f"g{i}" for i in range(len(GRID))]].to_numpy()
@@ -209,7 +211,7 @@ def summary(df: pd.DataFrame) -> None:
     r0 = df.r_none.to_numpy()
     print(f"{len(df)} cells ({int(no.sum())} without a shift), {df.set.nunique()} sets, "
           f"seeds {sorted(int(v) for v in df.seed.unique())}, labelled sizes up to {df.n_lab.max()}")
-    for name, rule in RULES.items():
+    for name, rule in rules().items():
         out = [rule(r) for r in df.itertuples()]
         w = np.array([o[0] for o in out])
         extra = np.array([o[1] for o in out])
