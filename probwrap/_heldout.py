@@ -532,25 +532,10 @@ def copied_case_cells(X: Any, counts: np.ndarray, index: Any = _HASH_ROWS) -> np
 
 
 #: The whole-row test of :func:`_whole_rows_beyond_chance`: rows sharing all their features
-#: count as copies when the pairs of them are at least ``_WHOLE_ROW_CHANCE_FACTOR`` times what
-#: independent draws from the columns' own value shares would share. ``False`` switches the
-#: test off.
+#: count as copies when the pairs of them are at least this many times what independent draws
+#: from the columns' own value shares would share (ten, as :func:`_ties_by_chance`: common
+#: practice). ``False`` switches the test off.
 _WHOLE_ROW_COPIES = True
-
-#: ... that many times. Was ten (as :func:`_ties_by_chance`, common practice); four since
-#: session 29. Independent cases share whole rows 0.56-2.07 times as often as the product of
-#: their columns' shares says: the six tallied tables of ``benchmarks/hunt27_sweep.py``
-#: (Toxaemia, CoalMiners, minn38, Alligator, DanishWelfare, HairEyeColor; 40, 100 and 300
-#: people, three draws, cross-fitted and frozen: 108 tables) and 250-1,500 distinct rows of
-#: mlmRev's Gcsemv and survival's colon. Rows given whole-number weights 1-4 (each row that many
-#: copies) share them 6.6-9.6 times as often on Gcsemv (two exam scores of 70 and 90 values,
-#: 100 rows, ten draws), 14.5-29.5 times on KMsurv's burn and 79 or more on every other set of
-#: ``benchmarks/hunt28_sweep.py``: at ten, Gcsemv's copies were read as independent cases, the
-#: folds put a row's copies apart and ``auto`` learned their labels (test log loss up to 1.33
-#: times scikit-learn's sigmoid with the same weights; docs/evidence/small_data_log.md, "Tiny
-#: multiclass sets and copied survey rows (session 29)"). Four is twice the largest ratio seen
-#: without copies.
-_WHOLE_ROW_CHANCE_FACTOR = 4.0
 
 
 def _whole_rows_beyond_chance(columns: list, cells: np.ndarray, weights: np.ndarray | None) -> bool:
@@ -587,7 +572,7 @@ def _whole_rows_beyond_chance(columns: list, cells: np.ndarray, weights: np.ndar
         share = np.bincount(np.asarray(codes, dtype=np.intp), weights=c) / n
         log_agree += float(np.log(max(np.sum(share ** 2), 1e-300)))
     chance = n * (n - 1.0) / 2.0 * float(np.exp(log_agree))
-    return pairs >= _WHOLE_ROW_CHANCE_FACTOR * chance
+    return pairs >= 10.0 * chance
 
 
 def case_cells_of(copies: np.ndarray, cases: np.ndarray) -> np.ndarray:

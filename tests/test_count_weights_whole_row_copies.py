@@ -12,8 +12,7 @@ frozen model (test log loss 1.29 times scikit-learn's ``CalibratedClassifierCV(m
 with the same weights), and a cross-fitted network memorised them (held-out log loss 0.17 on
 heplots' ``TIPI``; test 1.58 times the sigmoid's). Since session 28 rows that share their whole
 feature vector far more often than independent draws of the columns would (ten times the
-product of the columns' tie probabilities, four since session 29, ``_whole_rows_beyond_chance``)
-are copies too
+product of the columns' tie probabilities, ``_whole_rows_beyond_chance``) are copies too
 (docs/small_data.md, "The session-28 hunt").
 
 The reference is scikit-learn's sigmoid fitted with the same weights on the same rows (its
