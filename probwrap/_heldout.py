@@ -519,8 +519,12 @@ def copied_case_cells(X: Any, counts: np.ndarray, index: Any = _HASH_ROWS) -> np
             if 4 * in_cases.shape[0] >= n_distinct and not _ties_by_chance(
                     Xk, j, in_cases, weights=c):
                 exclusive |= in_cases[codes] == size
-        if not exclusive.any() and _whole_rows_beyond_chance(columns, cells, c):
-            exclusive[:] = True
+        if not exclusive.any():
+            ratio = _whole_row_tie_ratio(columns, cells, c)
+            if ratio >= 10.0:
+                exclusive[:] = True
+            elif ratio >= _WHOLE_ROW_UNSURE_RATIO:
+                _warn_unsure_copies(ratio, int(keep.shape[0]), float(c.sum()))
     except (TypeError, ValueError):  # a column whose values cannot be compared
         return None
     copies = shared & exclusive
@@ -536,6 +540,35 @@ def copied_case_cells(X: Any, counts: np.ndarray, index: Any = _HASH_ROWS) -> np
 #: from the columns' own value shares would share (ten, as :func:`_ties_by_chance`: common
 #: practice). ``False`` switches the test off.
 _WHOLE_ROW_COPIES = True
+
+#: Whole-number weights whose rows share their whole feature vector at least this many times as
+#: often as independent columns would, but under the ten that marks copies, warn: the rows
+#: repeated by their counts could be copies of a row (each weight counting one unit several
+#: times) or independent cases whose columns go together, and the folds split them as cases.
+#: mlmRev's Gcsemv (two exam scores), weights 1-4 on 100 rows, copies by construction:
+#: 6.6-9.6 times, and `auto` 1.19-1.46 times scikit-learn's sigmoid on a cross-fitted extra
+#: trees model; statsmodels' fair (eight survey answers that go together, no copies): 3.4-8.8
+#: times on 250-1,000 people, so no factor tells the two apart. The six tallied tables of
+#: benchmarks/hunt27_sweep.py (108 draws of 40-300 people) gave at most 2.07: three leaves them
+#: quiet (docs/evidence/small_data_log.md, "Tiny multiclass sets and copied survey rows
+#: (session 29)").
+_WHOLE_ROW_UNSURE_RATIO = 3.0
+
+
+def _warn_unsure_copies(ratio: float, n_rows: int, n_cases: float) -> None:
+    """The warning of ``_WHOLE_ROW_UNSURE_RATIO``."""
+    warnings.warn(
+        f"sample_weight: the whole-number weights are read as counts of independent cases "
+        f"({n_rows} rows, {n_cases:.0f} cases), and the folds split each row's cases; but the "
+        f"cases share their whole feature vector {ratio:.1f} times as often as independent "
+        "columns would, which copies of a row (a weight counting one unit several times) give "
+        "as well as columns that go together. If a row's weight counts copies of one unit, its "
+        "copies sit on both sides of a fold and the held-out checks are too kind: pass folds "
+        "that keep each row whole (`cv` as index pairs of the rows) or weights that are not "
+        "counts.",
+        UserWarning,
+        stacklevel=4,
+    )
 
 
 def _whole_rows_beyond_chance(columns: list, cells: np.ndarray, weights: np.ndarray | None) -> bool:
@@ -557,22 +590,29 @@ def _whole_rows_beyond_chance(columns: list, cells: np.ndarray, weights: np.ndar
     agree by chance about once in 10^6 pairs; a tallied table of a few factors (Toxaemia's
     class, smoking and urea) shares its cells as often as the factors' shares say.
     """
+    return _whole_row_tie_ratio(columns, cells, weights) >= 10.0
+
+
+def _whole_row_tie_ratio(columns: list, cells: np.ndarray, weights: np.ndarray | None) -> float:
+    """The pairs of rows (cases) in one cell of identical features over the pairs that
+    independent columns would give them (:func:`_whole_rows_beyond_chance`); 0 when the test
+    is off, there are fewer than two columns or two cases, or no pair."""
     if not _WHOLE_ROW_COPIES or len(columns) < 2:
-        return False
+        return 0.0
     c = np.ones(cells.shape[0]) if weights is None else np.asarray(weights, dtype=np.float64)
     n = float(np.sum(c))
     if n < 2.0:
-        return False
+        return 0.0
     size = np.bincount(cells, weights=c)
     pairs = float(np.sum(size * (size - 1.0) / 2.0))
     if pairs <= 0.0:
-        return False
+        return 0.0
     log_agree = 0.0
     for codes in columns:
         share = np.bincount(np.asarray(codes, dtype=np.intp), weights=c) / n
         log_agree += float(np.log(max(np.sum(share ** 2), 1e-300)))
     chance = n * (n - 1.0) / 2.0 * float(np.exp(log_agree))
-    return pairs >= 10.0 * chance
+    return pairs / chance if chance > 0.0 else float("inf")
 
 
 def case_cells_of(copies: np.ndarray, cases: np.ndarray) -> np.ndarray:
