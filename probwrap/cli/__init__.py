@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import difflib
 import errno
 import importlib
 import os
@@ -137,10 +138,45 @@ def _standard_input(args: argparse.Namespace, parser: argparse.ArgumentParser) -
         setattr(args, dest, StandardStream())
 
 
+def _verb_parser(parser: argparse.ArgumentParser, argv: list[str]) -> argparse.ArgumentParser:
+    """The innermost sub-parser ``argv`` names (``calibrate fit`` -> its parser)."""
+    current = parser
+    for token in argv:
+        subs = [a for a in current._actions if isinstance(a, argparse._SubParsersAction)]
+        if not subs:
+            break
+        if token in subs[0].choices:
+            current = subs[0].choices[token]
+    return current
+
+
+def _unknown_options(parser: argparse.ArgumentParser, argv: list[str],
+                     unknown: list[str]) -> None:
+    """Refuse arguments no option of the verb takes, with the verb's usage (not the top-level
+    ``probwrap VERB ...``) and the nearest option names for a misspelt flag
+    (``--capacty`` -> ``--capacity``); exits with code 2."""
+    verb = _verb_parser(parser, argv)
+    names = [o for a in verb._actions for o in a.option_strings if o.startswith("--")]
+    hints = []
+    for token in unknown:
+        if not token.startswith("--"):
+            continue
+        close = difflib.get_close_matches(token.split("=", 1)[0], names, n=2, cutoff=0.75)
+        if close:
+            hints.append(f"{token.split('=', 1)[0]}: did you mean "
+                         f"{' or '.join(close)}?")
+    message = "unrecognized arguments: " + " ".join(unknown)
+    if hints:
+        message += " (" + "; ".join(hints) + ")"
+    verb.error(message + f"; '{verb.prog} --help' lists the options")
+
+
 def _run(argv: list[str] | None) -> int:
     parser = build_parser()
     argv = join_negative_values([str(a) for a in (sys.argv[1:] if argv is None else argv)])
-    args = parser.parse_args(argv)
+    args, unknown = parser.parse_known_args(argv)
+    if unknown:
+        _unknown_options(parser, argv, unknown)
     _standard_input(args, parser)
     previous = None
     try:

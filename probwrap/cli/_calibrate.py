@@ -37,7 +37,14 @@ from ._common import (
     warn_line,
     whole_number,
 )
-from ._files import check_out_suffix, check_writable, to_stdout, write_table, write_text
+from ._files import (
+    check_out_suffix,
+    check_writable,
+    replaced_note,
+    to_stdout,
+    write_table,
+    write_text,
+)
 from ._progress import Stages, progress
 from ._promise_flags import (
     add_late_label_flags,
@@ -271,7 +278,7 @@ def _fit(args: argparse.Namespace) -> int:
         write_text(args.out, json.dumps(description, indent=2, allow_nan=False) + "\n")
     # with the map on standard output, the summary goes to stderr (stdout holds the map only)
     echo = sys.stderr if to_stdout(args.out) else sys.stdout
-    where = "standard output" if to_stdout(args.out) else args.out
+    where = "standard output" if to_stdout(args.out) else f"{args.out}{replaced_note(args.out)}"
     print(
         f"fitted {'an' if wrapper.method_[0] in 'aeiou' else 'a'} {wrapper.method_} map on {scores.shape[0]} rows ({counts[1]} with label "
         f"{shown(labels[1])}) and saved it to {where}", file=echo,
@@ -454,7 +461,7 @@ def _apply(args: argparse.Namespace) -> int:
     print(
         f"wrote {frame.shape[0]} rows with column {shown(args.output_column)} "
         f"({description['method']} map, {scale} scores) to "
-        f"{'standard output' if to_stdout(args.out) else args.out}",
+        f"{'standard output' if to_stdout(args.out) else str(args.out) + replaced_note(args.out)}",
         file=sys.stderr if to_stdout(args.out) else sys.stdout,
     )
     return 0

@@ -92,6 +92,7 @@ def check_writable(path: str | Path, *, folder: bool = False,
     """
     if to_stdout(path):
         return
+    given_path = path
     for flag, given in (inputs or {}).items():
         if given is None or to_stdout(given) or not isinstance(given, (str, os.PathLike)):
             continue
@@ -120,11 +121,31 @@ def check_writable(path: str | Path, *, folder: bool = False,
         raise DataError(_no_folder(path, target_dir, exc)) from None
     if not os.access(target_dir, os.W_OK | os.X_OK):
         raise DataError(f"{path}: cannot be written (the folder {target_dir} is read-only)")
+    if not folder:
+        _EXISTING[str(given_path)] = path.is_file()
     if not folder and path.is_file() and not os.access(path, os.W_OK):
         # the file is replaced by a rename, which a read-only file in a writable folder does
         # not stop: a file made read-only to keep it was replaced without a word
         raise DataError(f"{path}: is read-only; make it writable (chmod u+w) or give --out "
                         "another file name")
+
+
+#: output paths checked by :func:`check_writable`: whether a file was there already
+_EXISTING: dict[str, bool] = {}
+
+
+def replaced_note(path: str | Path) -> str:
+    """" (replaced the file that was there)" when :func:`check_writable` found a file at
+    ``path`` before the run, else "": the summary line says that an older output (a map, a
+    table, a page) is gone, which the write does without asking (see "How files are
+    written" in docs/command_line.md).
+
+    Examples
+    --------
+    >>> replaced_note("never-checked.json")
+    ''
+    """
+    return " (replaced the file that was there)" if _EXISTING.get(str(path)) else ""
 
 
 def write_atomic(path: str | Path, write: Callable[[Path], None]) -> None:

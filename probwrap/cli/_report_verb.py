@@ -33,7 +33,7 @@ from ._common import (
     weight_summary,
     whole_number,
 )
-from ._files import check_out_suffix, check_writable, to_stdout, write_text
+from ._files import check_out_suffix, check_writable, replaced_note, to_stdout, write_text
 from ._progress import Stages
 from ._promise_flags import (
     add_alarm_flags,
@@ -604,7 +604,7 @@ def cell_summary(content: Any, summary: dict) -> str:
 
 def _written_to(out: str) -> str:
     """Where the page went, for the summary line."""
-    return "the page to standard output" if to_stdout(out) else out
+    return "the page to standard output" if to_stdout(out) else f"{out}{replaced_note(out)}"
 
 
 def _print_summary(args: argparse.Namespace, line: str, summary: dict) -> None:

@@ -868,7 +868,8 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
                 f"{hint or _number_hint(raw_value, flag)}"
                 f"{_marker_hint(series, raw_value, path)}"
                 f"{_header_again_hint(frame, series, raw_value, path)}"
-                f"{_units_line_hint(frame, series, row, raw_value)}")
+                f"{_units_line_hint(frame, series, row, raw_value)}"
+                f"{_labels_hint(series, flag)}")
         raise DataError(f"{_row(path, column, row)}: {what}{_last_row_hint(bad)}")
     if grouped:
         _warn_grouped(path, column, flag, *grouped, values[grouped[1]])
@@ -1119,6 +1120,20 @@ def _units_line_hint(frame: Any, series: Any, row: int, value: Any) -> str:
             "header, delete it (every row below the header is read as data)")
 
 
+def _labels_hint(series: Any, flag: str) -> str:
+    """After "'yes' is not a finite number" in a score column that holds two values only, and
+    no number (``yes``/``no``): it is a column of labels, most likely given to
+    ``--score-column`` and the scores to ``--label-column`` (the columns swapped)."""
+    if flag != "--score-column":
+        return ""
+    distinct = series.dropna().astype(str).str.strip().unique()
+    if distinct.shape[0] != 2 or any(_number(v) is not None for v in distinct):
+        return ""
+    return (f"; the column holds only the two values {shown(distinct[0])} and "
+            f"{shown(distinct[1])}, as a column of labels does: if the scores are in the column "
+            "given to --label-column, swap the two column names")
+
+
 def _number_hint(value: Any, flag: str = "--score-column") -> str:
     """Why a field that looks like a number was not read as one, or "" (``flag``: the option
     naming the column; the percent advice speaks of scores only for a score column)."""
@@ -1271,6 +1286,17 @@ def read_labels(
                         f"{'that row, or remove it' if flagged.sum() == 1 else 'those rows, or remove them'}"
                         " if their outcome is neither of the two "
                         f"({shown(distinct[order[0]])} and {shown(distinct[order[1]])})")
+        if (distinct.shape[0] > 2 and not hint and score_column is not None
+                and pd.api.types.is_numeric_dtype(series.dtype)
+                and score_column in frame.columns):
+            # the scores given to --label-column and the 0/1 labels to --score-column
+            others = pd.unique(frame[score_column].dropna())
+            if others.shape[0] == 2:
+                hint = (f"; the column holds numbers, as a column of scores does, and "
+                        f"{shown(score_column)} ({score_flag}) only the two values "
+                        f"{shown(others[0])} and {shown(others[1])}, as a column of labels does: "
+                        f"the two column names look swapped (give {score_flag} {shown(column)} "
+                        f"{flag} {shown(score_column)})")
         if distinct.shape[0] == 1:  # "it holds 1: 1" read as a riddle
             raise DataError(
                 f"{path}: column {shown(column)} ({flag}) must hold exactly two labels (binary "

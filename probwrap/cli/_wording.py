@@ -62,6 +62,19 @@ _RULES: list[tuple[re.Pattern[str], str]] = [(re.compile(a), b) for a, b in [
      _WEIGHTS + " sum to less than the number of rows, so they cannot be row frequencies"),
     (r"(cannot be row frequencies); it was rescaled", r"\1; they were rescaled"),
     (r"`sample_weight`", _WEIGHTS),
+    (r"(\(--weight-column, or the late-label weights\)) is read as", r"\1 are read as"),
+    # the prevalence estimator's calibration step (report --weight-column with --unlabelled)
+    (r"\bPriorEstimator\.fit: ", "prevalence estimate: "),
+    (r"the calibration \(its test of whether calibrate_output keeps the model's own "
+     r"probabilities, its scale prior and output floor\) counts",
+     "its check of whether the scores are calibrated counts"),
+    (r"that test's choice and calibrate_output, and through the calibrated posteriors the "
+     r"estimate", "that check, and through it the estimate"),
+    (r"pass them divided by their sum: they then count",
+     "divide the column by its sum in the file: the weights then count"),
+    # count tables: the report's resampling unit
+    (r"pass their group as `cells` \(or `--cell-column`\)",
+     "name each row's group with --cell-column"),
     # folds and maps
     (r"CalibrationWrapper\(method='auto'\): `cv`=(\d+) asks for more folds",
      r"--method auto: --folds \1 asks for more folds"),
