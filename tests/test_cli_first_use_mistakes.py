@@ -144,3 +144,21 @@ def test_weighted_report_warnings_speak_of_flags_not_python_names(capsys, scores
                         "weights) is read"):
         assert python_name not in err  # ... in the command line's words
     assert "divide the column by its sum in the file" in err
+
+
+def test_weight_column_of_the_reference_file_names_the_reference_option(capsys, scores_file):
+    # before: "batch.csv: no column 'w' (given by --weight-column); the file has columns
+    # 'prob'", with no word that --weight-column weights the unlabelled rows only
+    frame = pd.read_csv(scores_file, index_col=0)
+    unlabelled = scores_file.with_name("batch only scores.csv")
+    frame[["prob"]].iloc[::3].to_csv(unlabelled, index=False)
+    code, _, err = run(capsys, "prevalence", "--unlabelled", unlabelled, "--score-column",
+                       "prob", "--reference", scores_file, "--label-column", "benign01",
+                       "--weight-column", "w", "--resamples", 0)
+    assert code == 1
+    assert "--reference-weight-column 'w' instead" in err
+    # the option it names works on the same files
+    code, out, _ = run(capsys, "prevalence", "--unlabelled", unlabelled, "--score-column",
+                       "prob", "--reference", scores_file, "--label-column", "benign01",
+                       "--reference-weight-column", "w", "--resamples", 0)
+    assert code == 0 and "reference weights: column 'w'" in out

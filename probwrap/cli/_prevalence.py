@@ -45,9 +45,11 @@ from ._common import (
     add_weight_dots_flag,
     check_ranking,
     check_row_count,
+    is_standard_stream,
     not_a_number,
     percent_hint,
     row_number,
+    shown,
     warn_line,
     weight_summary,
     whole_number,
@@ -421,6 +423,20 @@ def _run(args: argparse.Namespace) -> int:
                            text=([] if args.batch_column is None else [args.batch_column])
                            + ([] if args.cell_column is None else [args.cell_column]))
         proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale, verb="prevalence")
+        if (args.weight_column is not None and args.weight_column not in frame.columns
+                and args.reference is not None and not is_standard_stream(args.reference)):
+            # the weights of the labelled file given to --weight-column, which weights the
+            # unlabelled rows: say which option the user wanted
+            try:  # only on the way to an error: the reference file is read in full later
+                header = read_table(args.reference).columns
+            except DataError:
+                header = ()
+            if args.weight_column in header:
+                raise DataError(
+                    f"{args.unlabelled}: no column {shown(args.weight_column)} (given by "
+                    f"--weight-column, which weights the --unlabelled rows); the --reference "
+                    f"file {args.reference} has it: to weight the reference rows give "
+                    f"--reference-weight-column {shown(args.weight_column)} instead")
         weights = read_weights(frame, args.weight_column, args.unlabelled, "prevalence",
                                relative=True, dots=args.weight_dots)
         ref_weights = None
