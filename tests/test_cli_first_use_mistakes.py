@@ -162,3 +162,12 @@ def test_weight_column_of_the_reference_file_names_the_reference_option(capsys, 
                        "prob", "--reference", scores_file, "--label-column", "benign01",
                        "--reference-weight-column", "w", "--resamples", 0)
     assert code == 0 and "reference weights: column 'w'" in out
+
+
+def test_missing_column_message_explains_the_unnamed_index_column(capsys, scores_file):
+    # before: "the file has columns 'Unnamed: 0', 'prob', ...": a name that is not in the file
+    code, _, err = run(capsys, "cutoff", "--scores", scores_file, "--score-column", "Prob",
+                       "--label-column", "benign01", "--cost-fp", 1, "--cost-fn", 5)
+    assert code == 1
+    assert ("'Unnamed: 0' is an empty header cell, such as the row numbers pandas' to_csv "
+            "writes first") in err

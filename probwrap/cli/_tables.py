@@ -740,7 +740,11 @@ def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
 def _columns_listed(frame: Any) -> str:
     names = [shown(str(c)) for c in frame.columns[:10]]
     more = ", ..." if frame.shape[1] > 10 else ""
-    return ", ".join(names) + more
+    unnamed = [str(c) for c in frame.columns[:10] if _UNNAMED.fullmatch(str(c))]
+    # pandas' name for an empty header cell, which is not in the file: say what it stands for
+    note = (f" ({shown(unnamed[0])} is an empty header cell, such as the row numbers pandas' "
+            "to_csv writes first)") if unnamed else ""
+    return ", ".join(names) + more + note
 
 
 #: a CSV file whose first line holds numbers only (session 28)
