@@ -4,7 +4,6 @@ library names in the warnings of a weighted report.
 
 Files: held-out scores of scikit-learn's breast cancer (cross-validated logistic regression on
 two features), saved as a user would (pandas ``to_csv`` with the index, labels as words).
-The CLI test helpers are written inline (no shared helper module on this branch).
 """
 
 from __future__ import annotations
@@ -16,20 +15,10 @@ from sklearn.datasets import load_breast_cancer
 from sklearn.linear_model import LogisticRegression
 from sklearn.model_selection import cross_val_predict
 
+from _cli_helpers import run_cli as run
 from probwrap.cli import main
 
-
-@pytest.fixture(autouse=True)
-def _no_progress_lines(monkeypatch):
-    import probwrap.cli._progress as progress
-
-    monkeypatch.setattr(progress, "PROGRESS_DELAY", 1e9)
-
-
-def run(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
+pytestmark = pytest.mark.usefixtures("no_progress_lines")
 
 
 def usage_error(capsys, *argv):
