@@ -29,6 +29,18 @@ from probwrap import PriorShiftWrapper
 from probwrap.shift import PriorIntervalConflictWarning
 
 
+@pytest.fixture(autouse=True)
+def _own_class_spread(monkeypatch):
+    # these tests check the conflict widening on draws where the class-moment interval with each
+    # labelled class's own spread excluded the source shares; since session 29 the spread is
+    # floored at the one the posteriors imply (floor_class_spread), which on this digits case
+    # already reaches the source shares, so the floor is switched off here to keep testing
+    # the widening itself
+    import probwrap.shift._analytic as analytic
+
+    monkeypatch.setattr(analytic, "SPREAD_FLOOR", False)
+
+
 def _digits_case():
     X, y = load_digits(return_X_y=True)
     tr, rest = train_test_split(np.arange(len(y)), train_size=150, stratify=y, random_state=4)

@@ -471,6 +471,17 @@ def test_multiclass_refit_interval_is_the_fold_averaged_moment_interval():
         means.append(mean)
         covs.append(((u_s[rows] - mean) * wn[:, None]).T @ (u_s[rows] - mean))
         n_c.append(w.sum() ** 2 / np.dot(w, w))
+    # each class's spread floored at the one the calibrated posteriors imply (session 29): the
+    # score over all labelled rows (their fold re-weighting kept) weighted by the class's
+    # posterior, the class's matrix scaled by the largest ratio of diagonals above 1
+    p_cal = est.calibrate(p_s)
+    w_all = np.array([share[fold[i]] * np.sum(y_s == y_s[i])
+                      / np.sum((y_s == y_s[i]) & (fold == fold[i])) for i in range(len(y_s))])
+    for c in range(3):
+        wp = w_all * p_cal[:, c] / np.sum(w_all * p_cal[:, c])
+        d = u_s - wp @ u_s
+        implied = (d * wp[:, None]).T @ d
+        covs[c] = covs[c] * max(1.0, float(np.max(np.diag(implied) / np.diag(covs[c]))))
     bounds = moment_prior_interval((m_t, c_t, 58.0), (np.array(means), np.array(covs),
                                                       np.array(n_c)), 0.95)[0]
     ml = model.prior_estimate_.ml_prior

@@ -449,7 +449,8 @@ def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.
     est._warn_few_labelled(est.n_source_effective_)  # as in memory
     ml = _ml_prior(est, parts, prior, total)
     if moments is None:
-        moments = getattr(est, "_class_scores", None)
+        # each class's spread floored as in memory (PriorEstimator._floored; session 29)
+        moments = est._floored(getattr(est, "_class_scores", None))
     k = src.shape[0]
     level_all = all_shares_level(est.confidence_level, k)
     if moments is not None and target is not None:
@@ -596,7 +597,7 @@ def _refit_folds(est: Any, folds: Any) -> tuple | None:
     src = est.source_prior_
     moments = class_score_moments(class_score_sums(est.calibrate(source[0]), source[1], w_fold,
                                                    src))
-    return share, moments
+    return share, est._floored(moments, w_fold)  # as in memory (session 29)
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None,

@@ -292,6 +292,59 @@ def class_score_moments(
     return means, covs, n_c
 
 
+#: Whether the labelled classes' score spread is floored at the one the calibrated posteriors
+#: imply (:func:`floor_class_spread`) in the multiclass interval of ``PriorEstimator.estimate``;
+#: a benchmark may switch it off to compare (session 29; two classes: ``score_interval``'s
+#: ``spread_floor``, off by default).
+SPREAD_FLOOR = True
+
+
+def implied_class_covs(
+    proba: np.ndarray, w: np.ndarray, source_prior: np.ndarray,
+) -> np.ndarray:
+    """Per-class covariance ``(k, k-1, k-1)`` of the shift test's score (as
+    :func:`class_score_sums`) that the calibrated posteriors ``proba`` of the labelled rows
+    imply: over *all* labelled rows, each weighted by ``w`` times its posterior of the class
+    (Bayes' rule, :math:`E[g \\mid y = c] = E[p_c(x)\\, g(x)] / \\pi^s_c` for calibrated
+    posteriors). The floor of :func:`floor_class_spread`."""
+    src = np.asarray(source_prior, dtype=float)
+    p = np.asarray(proba, dtype=float)
+    q = p / src
+    u = q[:, 1:] - q[:, :1]
+    k = src.shape[0]
+    out = np.zeros((k, k - 1, k - 1))
+    for c in range(k):
+        wc = np.asarray(w, dtype=float) * np.clip(p[:, c], 0.0, None)
+        if not wc.sum() > 0:
+            continue
+        wc = wc / wc.sum()
+        d = u - wc @ u
+        out[c] = (d * wc[:, None]).T @ d
+    return out
+
+
+def floor_class_spread(class_moments: tuple, implied: np.ndarray) -> tuple:
+    """``class_moments`` (:func:`class_score_moments`) with each class's per-row covariance
+    scaled up by the largest ratio of a diagonal entry of ``implied``
+    (:func:`implied_class_covs`) to its own, where that exceeds 1 (a scaling keeps the
+    matrix positive semi-definite and its correlations). A class's few labelled rows that miss
+    the rows the model confuses with another class give a class mean that is off and a
+    spread that is too small together (the score is skewed within a class; the same floor as
+    :func:`probwrap.shift.score_interval`'s ``spread_floor``, session 29)."""
+    means, covs, n_c = class_moments
+    covs = np.array(covs, dtype=float, copy=True)
+    for c in range(covs.shape[0]):
+        own = np.diag(covs[c])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = np.where(own > 0, np.diag(implied[c]) / np.maximum(own, 1e-300), 1.0)
+        f = float(np.max(ratio)) if ratio.size else 1.0
+        if not np.any(own > 0):  # no spread of its own (a class of one row): the implied one
+            covs[c] = np.array(implied[c], dtype=float)
+        elif np.isfinite(f) and f > 1.0:
+            covs[c] = covs[c] * f
+    return means, covs, n_c
+
+
 def moment_prior_interval(
     target: tuple, class_moments: tuple, confidence_level: float,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None:
