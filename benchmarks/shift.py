@@ -990,9 +990,8 @@ def _share_draws(source, n_lab, n_unl, src_prior, tgt_prior, reps):
         # mean scores re-weighted to the shares (moment_prior_interval), in either shape
         m_t, c_t, _ = _mean_cov(_score_rows(est.calibrate(p_t), est.source_prior_),
                                 np.ones(n_unl))
-        # each class's spread floored as adapt does (session 29)
-        moments = est._floored(est._class_score_moments())
-        _, centre, cov, df = moment_prior_interval((m_t, c_t, float(n_unl)), moments, 0.95)
+        _, centre, cov, df = moment_prior_interval((m_t, c_t, float(n_unl)),
+                                                   est._class_score_moments(), 0.95)
         for shape in shapes:
             for level in (0.90, 0.95):
                 b = _widen(share_interval(centre, cov, level, shape, df), ml, ml,

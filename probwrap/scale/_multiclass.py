@@ -449,8 +449,7 @@ def _analytic_interval(est, estimator, rows, parts, prior, total, n_eff, unit=1.
     est._warn_few_labelled(est.n_source_effective_)  # as in memory
     ml = _ml_prior(est, parts, prior, total)
     if moments is None:
-        # each class's spread floored as in memory (PriorEstimator._floored; session 29)
-        moments = est._floored(getattr(est, "_class_scores", None))
+        moments = getattr(est, "_class_scores", None)
     k = src.shape[0]
     level_all = all_shares_level(est.confidence_level, k)
     if moments is not None and target is not None:

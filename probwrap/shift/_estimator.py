@@ -470,9 +470,12 @@ class PriorEstimator(_Resampling):
         )
         # and the labelled rows' class-conditional score moments behind the default interval
         # (moment_prior_interval): k small matrices
+        # (each class's spread floored at the one the posteriors imply, _floored: kept in the
+        # summary, so a fit beyond 20,000 rows that keeps no rows floors it too; session 29)
         self._class_scores = (
-            class_score_moments(class_score_sums(p_cal, y_idx, w, self.source_prior_),
-                                effective_rows) if k > 2 else None
+            self._floored(class_score_moments(class_score_sums(p_cal, y_idx, w,
+                                                               self.source_prior_),
+                                              effective_rows)) if k > 2 else None
         )
         return self
 
@@ -561,8 +564,8 @@ class PriorEstimator(_Resampling):
         if moments is None and self.n_classes_ > 2:
             src = self._source_rows()
             if src is not None and self._source_row_counts() is None:
-                moments = class_score_moments(class_score_sums(
-                    self.calibrate(src[0]), src[1], src[2], self.source_prior_))
+                moments = self._floored(class_score_moments(class_score_sums(
+                    self.calibrate(src[0]), src[1], src[2], self.source_prior_)))
                 self._class_scores = moments
         return moments
 
@@ -982,7 +985,8 @@ class PriorEstimator(_Resampling):
                             minlength=k))
                     moments = class_score_moments(sums)
                     w_implied = w_fold
-                moments = self._floored(moments, w_implied)
+                if w_implied is not None:  # (the fit's own moments were floored at fit)
+                    moments = self._floored(moments, w_implied)
                 self._warn_moment_rank(moments)
                 found = moment_prior_interval((m_t, c_t, n_test), moments,
                                               self.confidence_level)
