@@ -215,7 +215,11 @@ def _class_score_sums(block, calibrator, src):
     onehot = np.eye(k)[y] * w[:, None]  # (n, k)
     su = onehot.T @ u
     suu = np.einsum("nc,ni,nj->cij", onehot, u, u)
-    return su, suu, onehot.sum(axis=0), (onehot * w[:, None]).sum(axis=0)
+    # and weighted by each row's posterior of every class, for the spread the posteriors imply
+    # (probwrap.shift._analytic.implied_class_covs; session 29)
+    pw = p * w[:, None]
+    return (su, suu, onehot.sum(axis=0), (onehot * w[:, None]).sum(axis=0),
+            pw.T @ u, np.einsum("nc,ni,nj->cij", pw, u, u), pw.sum(axis=0))
 
 
 def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
@@ -338,7 +342,8 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
                 lambda bb: parts.reduce(_floored_sums, cal.scale_, bb, total, clip, cal.floor_),
                 cal.bias_, class_weight / total, cal.floor_)
         hard, soft, loss_sum = parts.reduce(_confusions, cal, k)
-        su, suu, sw, sww = parts.reduce(_class_score_sums, cal, class_weight / total)
+        su, suu, sw, sww, spu, spuu, spw = parts.reduce(_class_score_sums, cal,
+                                                        class_weight / total)
         eta_sums = None
         if _wants_interval(owner):
             # the labelled side of the analytic interval: sums for the sandwich covariance of
@@ -376,6 +381,15 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
 
         est._class_scores = class_score_moments((su, suu, sw, sww),
                                                 est.n_source_effective_ if cases else None)
+        from ..shift import _analytic
+
+        if _analytic.SPREAD_FLOOR:
+            # each class's spread floored at the one the posteriors imply, as in memory
+            # (PriorEstimator._floored, implied_class_covs, from the same sums; session 29)
+            safe = np.maximum(spw, np.finfo(float).tiny)
+            mean_p = spu / safe[:, None]
+            implied = spuu / safe[:, None, None] - np.einsum("ci,cj->cij", mean_p, mean_p)
+            est._class_scores = _analytic.floor_class_spread(est._class_scores, implied)
     # the labelled side of the two-sample shift test, as in memory: the plain mean of the
     # scores and its variance (probwrap.shift._shift_tests._source_moments without classes)
     est._source_score = _source_moments_from_sums(su.sum(axis=0), suu.sum(axis=0),
