@@ -294,8 +294,8 @@ def class_score_moments(
 
 #: Whether the labelled classes' score spread is floored at the one the calibrated posteriors
 #: imply (:func:`floor_class_spread`) in the multiclass interval of ``PriorEstimator.estimate``;
-#: a benchmark may switch it off to compare (session 29; two classes: ``score_interval``'s
-#: ``spread_floor``, off by default).
+#: a benchmark may switch it off to compare (session 29; the two-class score interval has no
+#: such floor: measured there, it covered none of the misses, docs/evidence/prior_shift_log.md).
 SPREAD_FLOOR = True
 
 
@@ -329,8 +329,11 @@ def floor_class_spread(class_moments: tuple, implied: np.ndarray) -> tuple:
     (:func:`implied_class_covs`) to its own, where that exceeds 1 (a scaling keeps the
     matrix positive semi-definite and its correlations). A class's few labelled rows that miss
     the rows the model confuses with another class give a class mean that is off and a
-    spread that is too small together (the score is skewed within a class; the same floor as
-    :func:`probwrap.shift.score_interval`'s ``spread_floor``, session 29)."""
+    spread that is too small together: the score is skewed within a class, the mean-variance
+    correlation of skewed data that makes Student's t anti-conservative on one side (Johnson
+    1978, "Modified t tests and confidence intervals for asymmetrical populations", JASA 73,
+    536-544, cited from memory); the implied spread reads the rows a class's own rows missed
+    from the other classes' rows, where the model puts them (session 29)."""
     means, covs, n_c = class_moments
     covs = np.array(covs, dtype=float, copy=True)
     for c in range(covs.shape[0]):

@@ -179,7 +179,6 @@ def score_interval(
     target_moments: Any = None,
     null_variance_below: float = 100.0,
     null_variance_fade_from: float | None = None,
-    spread_floor: bool = False,
 ) -> tuple[np.ndarray, bool]:
     r"""Two-sample score interval for the positive-class prior of unlabelled rows (two classes).
 
@@ -250,20 +249,6 @@ def score_interval(
     up to 0.55 between 99.99 and 100.01 rows on scikit-learn's breast cancer set;
     docs/evidence/prior_shift_log.md, "Small batches: the 100-row switch and broken assumptions").
 
-    With ``spread_floor``, each class's per-row variance :math:`s^2_c(\pi)` is floored at the
-    variance the calibrated posteriors imply for that class: the same score over *all* labelled rows,
-    each weighted by its posterior of class ``c``, which estimates the class-conditional
-    variance by Bayes' rule, :math:`E[g \mid y = c] = E[p_c(x)\, g(x)] / \pi^s_c`, wherever the
-    posteriors are calibrated. The score is skewed within a class (a row of class ``c`` that
-    looks like the other class has a large score of the wrong sign), so a class's few labelled
-    rows that happen to miss those rows give a mean that is off *and* a variance that is too
-    small, together (the mean-variance correlation of skewed data that makes Student's t
-    anti-conservative on one side; Johnson 1978, "Modified t tests and confidence intervals
-    for asymmetrical populations", JASA 73, 536-544, cited from memory). The posterior-weighted
-    variance reads those rows from the other class's labelled rows, where the model puts them;
-    the larger of the two is kept (docs/evidence/prior_shift_log.md, "Intervals that miss on
-    an unusual labelled draw (session 29)").
-
     With ``cells`` / ``source_cells`` (aggregated counts: the rows of one group share a cell)
     a side's variance is the cluster-robust (sandwich) variance of its mean with the cells as
     clusters, known to ``cells - 1`` degrees of freedom (:mod:`probwrap.shift._cells`; Liang &
@@ -319,12 +304,6 @@ def score_interval(
         and ``null_variance_below`` effective rows the two variances are blended. None: half
         of ``null_variance_below``; equal to it gives the step at ``null_variance_below``
         of before.
-    spread_floor : bool, default=False
-        Floor each class's labelled variance at the one its calibrated posteriors imply
-        (above; without ``source_cells``). Not the default: on the session-29 two-class
-        cells it widened intervals by up to 16 % and turned no miss into a cover (the
-        multiclass interval floors by default, :func:`probwrap.shift._analytic.
-        floor_class_spread`, where it did).
 
     Returns
     -------
@@ -390,14 +369,6 @@ def score_interval(
         else:
             n_c = float(wc.sum() ** 2 / np.dot(wc, wc))
         strata.append((q_s[rows, 0], q_s[rows, 1] - q_s[rows, 0], wc / wc.sum(), n_c))
-    # each class's posterior-weighted weights over all labelled rows (spread_floor)
-    implied = None
-    if spread_floor and source_cells is None:
-        implied = []
-        for c in (0, 1):
-            wp = w_s * np.clip(p_s[:, c], 0.0, None)
-            implied.append(wp / wp.sum() if wp.sum() > 0 else None)
-        a_all, d_all = q_s[:, 0], q_s[:, 1] - q_s[:, 0]
 
     from ._cells import cell_sums, check_cells
 
@@ -479,8 +450,6 @@ def score_interval(
             var = np.zeros(tc.shape[0])
             spread = np.zeros(tc.shape[0])
             h_s = None if cell_s is None else np.zeros((p_s.shape[0], tc.shape[0]))
-            u_a = (None if implied is None else
-                   d_all[:, None] / np.maximum(a_all[:, None] + tc * d_all[:, None], tiny))
             for c, (a_c, d_c, w_c, n_c) in enumerate(strata):
                 share = tc if c == 1 else 1.0 - tc
                 u_c = d_c[:, None] / np.maximum(a_c[:, None] + tc * d_c[:, None], tiny)
@@ -491,10 +460,6 @@ def score_interval(
                     h_s[rows_of[c]] = share * (u_c - m_c) * w_c[:, None]
                     continue
                 v_c = np.maximum(w_c @ (u_c * u_c) - m_c**2, 0.0)
-                if u_a is not None and implied[c] is not None:
-                    # the variance the calibrated posteriors imply for the class (above)
-                    m_a = implied[c] @ u_a
-                    v_c = np.maximum(v_c, implied[c] @ (u_a * u_a) - m_a**2)
                 comp = share**2 * v_c / max(n_c - 1.0, 1.0)
                 var = var + comp
                 spread = spread + comp**2 / max(n_c - 1.0, 1.0)
