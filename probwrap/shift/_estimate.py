@@ -27,6 +27,7 @@ __all__ = [
     "BoundaryPriorWarning",
     "FewLabelledRowsWarning",
     "PriorIntervalConflictWarning",
+    "NoConsistentPriorWarning",
     "kish_weights",
     "evidence_strength",
     "faded_strength",
@@ -159,6 +160,18 @@ class PriorIntervalConflictWarning(UserWarning):
     hundred labelled rows, whose small errors on new rows EM amplifies). The score test holds
     its level (on the multiclass sweep's unshifted cells it rejected at 0-3 % at level 5 %),
     so ``adapt`` widens the interval to reach the source prior and warns."""
+
+
+class NoConsistentPriorWarning(UserWarning):
+    """Two classes: no class share is consistent with both the labelled and the unlabelled rows.
+
+    The score interval (``interval="score"``) keeps the shares whose two-sample score test does
+    not reject at ``1 - confidence_level``; when it rejects every share, the labelled and the
+    unlabelled rows differ by more than a change of class shares explains (the features of a
+    class moved too, or the batch was selected on them), and the interval is the single
+    least-rejected share. Before session 29 a plain ``UserWarning`` with the same message;
+    this subclass of it lets a user filter or catch it by name.
+    """
 
 
 class FewLabelledRowsWarning(UserWarning):

@@ -42,6 +42,7 @@ from ._confusion import acc_prior, bbse_prior, heldout_confusion
 from ._estimate import (
     BoundaryPriorWarning,
     FewLabelledRowsWarning,
+    NoConsistentPriorWarning,
     PriorEstimate,
     PriorIntervalConflictWarning,
     PriorNotIdentifiedWarning,
@@ -954,7 +955,7 @@ class PriorEstimator(_Resampling):
                         "than a change of class shares explains. The prior-shift assumption "
                         "probably fails (the features of a class changed too); the interval "
                         "is the single least-rejected prior.",
-                        UserWarning,
+                        NoConsistentPriorWarning,
                         stacklevel=2,
                     )
                 bounds = np.array([[1.0 - hi, 1.0 - lo], [lo, hi]])
