@@ -188,11 +188,11 @@ _REFIT_SPREAD_RATIO_LIMIT = 3.0
 _LEVEL_TEMPERATURE_MAX_SE = 2.0
 
 #: ``method="auto"`` with two classes, cross-fitted on fewer rows than Platt-first asks for
-#: (``_PLATT_FIRST_CROSSFIT_MIN_ROWS``, of weight > 0), predicting with the refit: a chosen
-#: temperature that sharpens (``T < 1``) is capped at 1, the refit's own log-odds. On so few
-#: rows the held-out scores are often nearly separated by the draw alone, the temperature's fit
-#: then sharpens as far as its prior lets it, and the refitted model, applied to new rows that
-#: are not separated, is made over-confident. DAAG's nsw74psidA (treated or survey control, 252
+#: (``_PLATT_FIRST_CROSSFIT_MIN_ROWS``, of weight > 0), whether the refit or the fold models
+#: predict: a chosen temperature that sharpens (``T < 1``) is capped at 1, the predicting
+#: models' own log-odds. On so few rows the held-out scores are often nearly separated by the
+#: draw alone, the temperature's fit then sharpens as far as its prior lets it, and the models,
+#: applied to new rows that are not separated, are made over-confident. DAAG's nsw74psidA (treated or survey control, 252
 #: people), 30 labelled rows, two draws of four: the fold models' held-out log-odds misrank 0-3
 #: of about 220 pairs, T = 0.41-0.53, test log loss 1.23-1.48x scikit-learn's sigmoid for a
 #: logistic regression, a forest, a pipeline and an SVM; capped 0.95-1.05x
@@ -677,11 +677,12 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
 
     def _cap_few_row_sharpening(self, ho: Any, w: np.ndarray) -> None:
         """``method="auto"``, two classes, cross-fitted on fewer than
-        ``_PLATT_FIRST_CROSSFIT_MIN_ROWS`` rows (of weight > 0), the refit predicting: a chosen
-        temperature that sharpens (``T < 1``) is capped at 1, the refit's own log-odds (see
-        ``_CAP_FEW_ROW_SHARPENING``; ``method_notes_`` says so)."""
+        ``_PLATT_FIRST_CROSSFIT_MIN_ROWS`` rows (of weight > 0), the refit or the fold models
+        predicting: a chosen temperature that sharpens (``T < 1``) is capped at 1, the
+        predicting models' own log-odds (see ``_CAP_FEW_ROW_SHARPENING``; ``method_notes_``
+        says so)."""
         if (not _CAP_FEW_ROW_SHARPENING or self.method_ != "temperature"
-                or self.predicted_with_ != "refit" or len(self.classes_) != 2):
+                or self.predicted_with_ == "frozen" or len(self.classes_) != 2):
             return
         temperature = float(getattr(self.calibrator_, "temperature_", np.nan))
         n_rows = int(np.count_nonzero(np.asarray(w) > 0))
@@ -693,7 +694,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             f"temperature capped at 1 (fitted {temperature:.3g}): the model is cross-fitted on "
             f"{n_rows} rows, fewer than {_PLATT_FIRST_CROSSFIT_MIN_ROWS}, and a sharpening read "
             "off so few held-out rows (often nearly separated by chance) is not carried over to "
-            "the refitted model"
+            "new rows"
         )
         notes = self.method_notes_
         notes["temperature"] = text if "temperature" not in notes else notes["temperature"] + "; " + text
