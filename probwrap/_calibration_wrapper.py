@@ -13,13 +13,7 @@ from sklearn.base import clone
 from sklearn.utils import _safe_indexing, indexable
 from sklearn.utils.metaestimators import available_if
 
-from ._calibration_auto import (
-    _PLATT_FIRST_CROSSFIT_MIN_ROWS,
-    CALIBRATION_METHODS,
-    CLASS_SHARES,
-    _AutoChoice,
-    _boundary_of,
-)
+from ._calibration_auto import CALIBRATION_METHODS, CLASS_SHARES, _AutoChoice, _boundary_of
 from ._calibration_shares import class_shares_map
 from ._heldout import (
     HeldOutClassifierBase,
@@ -186,19 +180,6 @@ _REFIT_SPREAD_RATIO_LIMIT = 3.0
 #: of 30-150 rows (eight models, seed 0) no sharpening temperature met a ratio above 1.32, so
 #: nothing changes there.
 _LEVEL_TEMPERATURE_MAX_SE = 2.0
-
-#: ``method="auto"`` with two classes, cross-fitted on fewer rows than Platt-first asks for
-#: (``_PLATT_FIRST_CROSSFIT_MIN_ROWS``, of weight > 0), whether the refit or the fold models
-#: predict: a chosen temperature that sharpens (``T < 1``) is capped at 1, the predicting
-#: models' own log-odds. On so few rows the held-out scores are often nearly separated by the
-#: draw alone, the temperature's fit then sharpens as far as its prior lets it, and the models,
-#: applied to new rows that are not separated, are made over-confident. DAAG's nsw74psidA (treated or survey control, 252
-#: people), 30 labelled rows, two draws of four: the fold models' held-out log-odds misrank 0-3
-#: of about 220 pairs, T = 0.41-0.53, test log loss 1.23-1.48x scikit-learn's sigmoid for a
-#: logistic regression, a forest, a pipeline and an SVM; capped 0.95-1.05x
-#: (benchmarks/hunt29_sweep.py, docs/evidence/small_data_log.md, "The session-29 hunt").
-#: ``False`` switches the rule off.
-_CAP_FEW_ROW_SHARPENING = True
 
 
 def _kept_probability_map() -> IdentityMap:
@@ -498,7 +479,6 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         scores, w = self.__dict__.pop("_map_rows")
         if self.method == "auto":
             self._cap_level_sharpening(scores, ho, w)
-            self._cap_few_row_sharpening(ho, w)
             self._drop_class_scales_fitted_to_level(scores, ho, w)
         return self
 
@@ -673,31 +653,6 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             "the sharpening was fitted to their level, not to a spread like the refit's, and "
             f"that level fixes 1/T only to within {se:.3g} (one standard error)"
         )
-        self.calibrator_ = capped
-
-    def _cap_few_row_sharpening(self, ho: Any, w: np.ndarray) -> None:
-        """``method="auto"``, two classes, cross-fitted on fewer than
-        ``_PLATT_FIRST_CROSSFIT_MIN_ROWS`` rows (of weight > 0), the refit or the fold models
-        predicting: a chosen temperature that sharpens (``T < 1``) is capped at 1, the
-        predicting models' own log-odds (see ``_CAP_FEW_ROW_SHARPENING``; ``method_notes_``
-        says so)."""
-        if (not _CAP_FEW_ROW_SHARPENING or self.method_ != "temperature"
-                or self.predicted_with_ == "frozen" or len(self.classes_) != 2):
-            return
-        temperature = float(getattr(self.calibrator_, "temperature_", np.nan))
-        n_rows = int(np.count_nonzero(np.asarray(w) > 0))
-        if not temperature < 1.0 or n_rows >= _PLATT_FIRST_CROSSFIT_MIN_ROWS:
-            return
-        capped = copy.copy(self.calibrator_)
-        capped.temperature_ = 1.0
-        text = (
-            f"temperature capped at 1 (fitted {temperature:.3g}): the model is cross-fitted on "
-            f"{n_rows} rows, fewer than {_PLATT_FIRST_CROSSFIT_MIN_ROWS}, and a sharpening read "
-            "off so few held-out rows (often nearly separated by chance) is not carried over to "
-            "new rows"
-        )
-        notes = self.method_notes_
-        notes["temperature"] = text if "temperature" not in notes else notes["temperature"] + "; " + text
         self.calibrator_ = capped
 
     def _drop_class_scales_fitted_to_level(self, scores: np.ndarray, ho: Any,
