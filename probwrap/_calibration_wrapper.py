@@ -236,7 +236,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
     cv : int, splitter or iterable of (train, test) pairs, default=5
         Folds for cross-fitting (stratified and shuffled when an int). With a frozen estimator
         only ``"auto"`` uses it, to score the candidate maps; an int larger than the smallest
-        class's count of rows is cut down to that count, with a warning.
+        class's count of rows is cut down to that count, with a warning when it is not the
+        default 5 (a tiny class is named by ``FewClassRowsWarning`` already).
     n_jobs : int, default=None
         Parallel jobs for cross-fitting (joblib).
     random_state : int, RandomState or None, default=None
