@@ -22,7 +22,10 @@ was 2.07 times statsmodels' group-robust one, the bootstrap of whole districts 0
 
 ``cells=False`` keeps the row bootstrap. With scores alone (``y_true``/``y_prob``) the features
 are not known; weighted rows with identical forecasts and different labels then only earn a
-note that asks for ``cells``.
+note that asks for ``cells``, and only when the weights are whole-number counts
+(:func:`probwrap._validation.whole_counts`) with at least half of them on such tied forecasts
+(:func:`tied_count_share`; since session 29: before, any unequal weights and one tied pair
+of labels raised it, on individual people too).
 
 For binary outcomes and weights that are whole numbers (trial counts), the cells' Pearson
 dispersion (:func:`probwrap.aggregated.binomial_dispersion`, held-out forecasts: no fitted
@@ -50,7 +53,8 @@ from .._validation import plain, whole_counts
 
 __all__ = ["ResamplingUnit", "resampling_unit", "unit_words", "DISPERSION_NOTE_RATIO",
            "DISPERSION_NOTE_PVALUE", "bin_dispersion", "bin_intervals", "frequency_table_levels",
-           "frequency_cases", "FrequencyCases", "MAX_TABLE_CASES"]
+           "frequency_cases", "FrequencyCases", "MAX_TABLE_CASES", "tied_count_share",
+           "TIED_COUNT_SHARE"]
 
 #: the report warns about overdispersion when the cells' Pearson dispersion is above this ratio
 #: (common practice reads values near 1 as binomial; 1.5 is our rule of thumb for "well above")
@@ -254,6 +258,50 @@ def _dispersion(codes: np.ndarray, n_cells: int, y01: np.ndarray, p: np.ndarray,
     return ratio, float(chi2.sf(ratio * m, m)), ""
 
 
+#: With scores alone, the note asking for ``cells`` needs at least this share of the weight on
+#: tied forecasts that carry more than one label (:func:`tied_count_share`): half, common
+#: practice for "most".
+TIED_COUNT_SHARE = 0.5
+
+
+def tied_count_share(codes: np.ndarray, y_index: np.ndarray, w: np.ndarray | None) -> float:
+    """The share of the weight on rows whose forecast ``codes`` group holds more than one label,
+    when the weights are a count table (:func:`probwrap._validation.whole_counts`); 0 otherwise.
+
+    Expanded ``k`` of ``n`` counts (:func:`probwrap.aggregated.expand_counts`) put a success row
+    and a failure row on every forecast, so nearly all their weight lies on such groups (star98:
+    1.0; datasets' UCBAdmissions and Titanic tables: 1.0 and 0.99), and their weights are whole
+    numbers. Individual rows whose model repeats some scores (boosting, naive Bayes on coarse
+    columns) have a few percent of their weight there (openintro's acs12, 481 people,
+    gradient boosting: 0.02), and survey, normalised or scaled weights are no counts at all
+    (docs/evidence/small_data_log.md, "The report's tied-forecast warning on individual rows
+    (session 29)").
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> codes, y = np.array([0, 0, 1, 1, 2]), np.array([1, 0, 1, 0, 1])
+    >>> float(tied_count_share(codes, y, np.array([3.0, 5.0, 2.0, 7.0, 3.0])))
+    0.85
+    >>> float(tied_count_share(codes, y, np.array([0.3, 0.5, 0.2, 0.7, 0.3])))  # no counts
+    0.0
+    """
+    if w is None:
+        return 0.0
+    w = np.asarray(w, dtype=float).ravel()
+    if whole_counts(w) is None or float(w.sum()) <= 0.0:
+        return 0.0
+    codes = np.asarray(codes, dtype=np.intp).ravel()
+    y_index = np.asarray(y_index, dtype=np.intp).ravel()
+    n_cells = int(codes.max()) + 1
+    lo = np.full(n_cells, np.iinfo(np.intp).max)
+    hi = np.full(n_cells, -1)
+    np.minimum.at(lo, codes, y_index)
+    np.maximum.at(hi, codes, y_index)
+    mixed = (hi > lo)[codes]
+    return float(w[mixed].sum() / w.sum())
+
+
 def resampling_unit(cells: Any, *, n: int, y_index: np.ndarray, w: np.ndarray | None,
                     X: Any = None, y01: np.ndarray | None = None, p: np.ndarray | None = None,
                     notes: Any = None) -> ResamplingUnit:
@@ -291,7 +339,7 @@ def resampling_unit(cells: Any, *, n: int, y_index: np.ndarray, w: np.ndarray | 
             codes, source = np.asarray(found, dtype=np.intp), "features"
     elif p is not None and notes is not None:
         ties = feature_cells(np.asarray(p, dtype=float).reshape(-1, 1), w, y_index)
-        if ties is not None:
+        if ties is not None and tied_count_share(ties, y_index, w) >= TIED_COUNT_SHARE:
             shared = int(np.unique(ties).shape[0])
             message = (
                 f"weighted rows with identical forecasts carry different labels ({shared} "
