@@ -224,7 +224,8 @@ def write_report(
         rule the wrappers' folds use) — but a frequency table (few levels per column, whole-
         number counts as weights, at most 200,000 cases) is read as its cases, the rows
         repeated by their counts, and cases are resampled, with a note — otherwise rows; with ``y_true``/``y_prob``, weighted rows
-        with identical forecasts and different labels only earn a note asking for ``cells``.
+        with identical forecasts and different labels only earn a note asking for ``cells``
+        (whole-number counts with at least half of them on such tied forecasts).
         False: always rows. The page says which unit was resampled and, for binary outcomes
         with whole-number weights, the cells' Pearson dispersion (a note when it is well above
         1). In ``content.resampling``. The report's own prevalence (class shares) estimate
