@@ -57,10 +57,12 @@ class GroupCheck:
         The group's rows, positives and negatives counted as the function judges them: the sums
         of the weights read as row frequencies (weight 2 counts a row twice, so integer weights
         give the counts of the duplicated rows). Weights summing to less than the number of
-        rows of positive weight cannot be frequencies and are first rescaled, over all rows
-        together, to sum to Kish's effective size ``(sum w)^2 / sum w^2`` (with a
-        ``WeightScaleWarning``; the project's weight contract, docs/calibration.md "Weights"),
-        so that scaling such weights changes nothing. The counts when every weight is 1.
+        rows of positive weight cannot be frequencies, nor (since session 29) can unequal
+        weights that are not all whole numbers (late-label IPCW or survey weights) or whole
+        numbers sharing a factor above 1; these are first rescaled, over all rows together, to
+        sum to Kish's effective size ``(sum w)^2 / sum w^2`` (with a ``WeightScaleWarning``;
+        docs/weights.md), and equal weights count each row once, so that scaling the weights
+        changes no group's verdict. The counts when every weight is 1.
     judged : bool
         Whether the group reaches ``min_rows`` and ``min_events``; groups not judged are listed
         but left out of the gaps.

@@ -22,6 +22,7 @@ from .._validation import (
     check_sample_weight,
     check_target_labels,
     plain,
+    shared_factor,
 )
 from ..calibration._base import WeightScaleWarning, count_weights
 
@@ -257,11 +258,33 @@ def warn_floored(n_floored: int, floor: float, what: str) -> None:
 def count_scale_weights(w: np.ndarray, what: str) -> np.ndarray:
     """Weights on the row-count scale for a statistic whose null distribution counts rows.
 
-    Weights are row frequencies and kept as given when they sum to at least the number of rows
-    of positive weight. Weights that sum to less (normalised to sum 1, or frequencies scaled by
-    1e-3) cannot be frequencies; they are rescaled to sum to Kish's (1965) effective sample size
-    ``(sum w)**2 / sum w**2``, with a :class:`~probwrap.calibration.WeightScaleWarning`, so that
-    the p-value does not depend on the scale of the weights.
+    Whole-number weights without a common factor above 1 (a count table: weight 2 counts a row
+    twice) are kept as given; so are unit weights. Weights that sum to less than the number of
+    rows of positive weight (normalised to sum 1, or frequencies scaled by 1e-3) cannot be
+    frequencies, and since session 29 neither are weights that are not all whole numbers
+    (importance weights such as the IPCW weights of
+    :func:`probwrap.late_labels.labels_at_horizon`, survey weights) nor unequal whole numbers
+    that all share a factor above 1 (counts multiplied by 1,000): all of these are rescaled
+    to sum to Kish's (1965) effective sample size ``(sum w)**2 / sum w**2``, with a
+    :class:`~probwrap.calibration.WeightScaleWarning`, so that the p-value, or whether a group
+    is judged, does not depend on the scale of the weights (docs/weights.md: scaling the
+    weights must not change a choice). Equal weights become 1 each without a warning.
+    Before session 29 weights summing to at least the rows were counted as they stood, so
+    ``hosmer_lemeshow_test``'s p-value went from 0.037 to 0.0 with every weight times 1,000,
+    and ``calibration_by_group`` judged 0 of 118 broods of lme4's grouseticks at weight 1 and
+    41 at weight 1,000, all without a word.
+
+    Examples
+    --------
+    >>> import warnings
+    >>> import numpy as np
+    >>> count_scale_weights(np.array([1.0, 2.0, 3.0]), "demo").tolist()  # counts: kept
+    [1.0, 2.0, 3.0]
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")
+    ...     a = count_scale_weights(np.array([1.0, 2.0, 3.0]) * 1e3, "demo")
+    >>> round(float(a.sum()), 4)  # Kish's size: 6**2 / 14
+    2.5714
     """
     out, rescaled = count_weights(w)
     if rescaled:
@@ -272,4 +295,26 @@ def count_scale_weights(w: np.ndarray, what: str) -> np.ndarray:
             WeightScaleWarning,
             stacklevel=3,
         )
-    return out
+        return out
+    positive = out[out > 0]
+    if not positive.size or not np.isfinite(positive).all():
+        return out
+    factor = shared_factor(positive)
+    if factor == 1:
+        return out  # unit weights, or whole-number counts: row frequencies
+    top = float(positive.max())
+    if float(positive.min()) == top:
+        return np.where(out > 0, 1.0, 0.0)  # equal weights: a scale, every row counts once
+    u = out / top  # scaled first: the sum of squares cannot overflow
+    kish = u * (u.sum() / (u @ u))
+    why = ("they are not all whole numbers" if factor is None
+           else f"every weight is a multiple of {factor}")
+    warnings.warn(
+        f"{what}: `sample_weight` is not a table of row counts ({why}), so it is read as "
+        "relative weights and rescaled to sum to Kish's effective sample size "
+        f"({kish.sum():.4g} rows, not {float(out.sum()):.6g}); multiplying every weight by a "
+        "constant changes nothing. Pass whole-number counts to count rows.",
+        WeightScaleWarning,
+        stacklevel=3,
+    )
+    return kish
