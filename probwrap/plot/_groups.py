@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from typing import Any
 
 import numpy as np
@@ -30,7 +31,9 @@ class GroupReliabilityDisplay:
     same bins, the number the multiclass report's by-group table shows. Groups not judged by
     ``calibration_by_group``'s rule (fewer than ``min_rows`` rows or ``min_events`` rows of a
     class, weights read as row frequencies; 100 and 10 by default, common practice) are drawn
-    dashed and marked "too few rows to judge" rather than left out.
+    dashed and marked "too few rows to judge" rather than left out. More than eight groups
+    draw a ``UserWarning`` (since session 29): the eight colours then repeat, so curves of
+    different groups look alike.
 
     Parameters
     ----------
@@ -162,6 +165,18 @@ class GroupReliabilityDisplay:
                 label="calibrated")
         self.lines_ = {}
         top = False
+        if len(self.tables) > len(_GROUP_COLOURS):
+            # more curves than colours: groups i and i + 8 would look alike without a word
+            warnings.warn(
+                f"GroupReliabilityDisplay: {len(self.tables)} groups drawn with "
+                f"{len(_GROUP_COLOURS)} colours, so the colours repeat (the curves of the first "
+                f"and the {len(_GROUP_COLOURS) + 1}th group look alike) and the legend lists "
+                f"{len(self.tables)} entries. Draw at most {len(_GROUP_COLOURS)} groups (e.g. "
+                "the rows of the largest ones) and read the others in "
+                "probwrap.metrics.calibration_by_group's table.",
+                UserWarning,
+                stacklevel=3,
+            )
         for i, (group, t) in enumerate(self.tables.items()):
             small = not self.judged[group]
             top = top or bool(getattr(t, "top_label", False))
