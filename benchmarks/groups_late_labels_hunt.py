@@ -302,6 +302,9 @@ def alarms(quick: bool) -> None:
         d["year"], d["month"], d["day"], strict=True)], dtype="datetime64[D]")
         - np.datetime64("2013-01-01")).astype(int)
     week = day // 7
+    # the set's rows are not in date order: sort them so the chart runs in time order
+    order = np.argsort(day, kind="stable")
+    X, y, month, week = X[order], y[order], month[order], week[order]
     lab = month == 1
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")

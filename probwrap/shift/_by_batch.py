@@ -138,6 +138,29 @@ def class_shift_scores(estimator: PriorEstimator, proba: Any, sample_weight: Any
 
 
 
+def _refuse_missing_batches(labels: np.ndarray) -> None:
+    """A ``ValueError`` when a batch label is missing (None, NaN, ``pd.NA`` or NaT), as the
+    command line refuses an empty batch cell: before session 29 such rows silently formed a
+    batch of their own ("nan"), placed in the table, and in a chart read off it, where its
+    first row happened to fall."""
+    from ..metrics._groups import _missing_label
+
+    if labels.dtype.kind == "f":
+        missing = np.flatnonzero(np.isnan(labels))
+    elif labels.dtype.kind in "mM":
+        missing = np.flatnonzero(np.isnat(labels))
+    elif labels.dtype == object:
+        missing = np.flatnonzero([_missing_label(v) for v in labels])
+    else:
+        return
+    if missing.size:
+        raise ValueError(
+            f"`batches` contains {missing.size} missing label(s) (None, NaN, NA or NaT; first "
+            f"at row {int(missing[0])}); give every row its batch (e.g. its date), or leave "
+            "those rows out."
+        )
+
+
 def prior_by_batch(
     estimator: PriorEstimator,
     proba: Any,
@@ -233,6 +256,7 @@ def prior_by_batch(
             raise ValueError(
                 f"`batches` must be 1-d with one label per row ({n}); got shape {labels.shape}."
             )
+        _refuse_missing_batches(labels)
         if labels.dtype == object:
             labels = labels.astype(str)
     codes = check_cells(cells, n)
