@@ -343,6 +343,19 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
                seed, notes, cells=None, x=None) -> GroupCheck:
     """One group's row of the table; ``x``: its forecasts as given log-odds (None: read
     from ``p``), which the slope, intercept and log loss are computed on."""
+    if not np.any(w > 0):
+        # every row of weight 0 (late labels: every outcome still open): nothing to compute,
+        # and dividing by the group's weight would only warn about 0 / 0
+        notes.append(f"group {plain(label)!r}: every row has weight 0 (for late labels: every "
+                     "outcome still open), so no number can be computed for it; it is listed, "
+                     "not judged.")
+        nan = float("nan")
+        return GroupCheck(group=label, weight=0.0, effective_rows=0.0, effective_positives=0.0,
+                          effective_negatives=0.0, judged=False, observed_rate=nan,
+                          mean_forecast=nan, calibration_error=nan, calibration_slope=nan,
+                          calibration_intercept=nan, brier=nan, brier_interval=(nan, nan),
+                          log_loss=nan, log_loss_interval=(nan, nan),
+                          cells=cell_sizes(y, w, cells, (1.0, 0.0)))
     pos = w * y
     neg = w * (1.0 - y)
     eff_rows, eff_pos, eff_neg = judged_sizes(w, y)

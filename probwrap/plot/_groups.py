@@ -135,10 +135,14 @@ class GroupReliabilityDisplay:
             classes = list(np.unique(y_arr[w > 0]))
         found, first = np.unique(g, return_index=True)
         tables, errors, eff, judged = {}, {}, {}, {}
+        weightless = []
         for label in found[np.argsort(first)]:
             rows = g == label
             key = label.item() if hasattr(label, "item") else label
             ww = w[rows]
+            if not np.any(ww > 0):  # e.g. late labels: every outcome of the group still open
+                weightless.append(key)
+                continue
             kw = {"n_bins": n_bins, "strategy": strategy, "sample_weight": ww}
             if labels is not None:  # 1-d: the two labels; 2-d: the labels of the columns
                 kw["labels"] = labels
@@ -153,6 +157,17 @@ class GroupReliabilityDisplay:
             eff[key] = float(ww.sum())
             sizes = [float(ww[y_arr[rows] == c].sum()) for c in classes]
             judged[key] = bool(eff[key] >= min_rows and min(sizes, default=0.0) >= min_events)
+        if weightless:
+            # before session 29 one such group stopped the whole picture with an error about
+            # all weights being zero
+            warnings.warn(
+                f"GroupReliabilityDisplay: {len(weightless)} group(s) have weight 0 on every "
+                "row (for late labels: every outcome still open) and get no curve: "
+                + ", ".join(str(k) for k in weightless[:10])
+                + (", ..." if len(weightless) > 10 else "") + ".",
+                UserWarning,
+                stacklevel=2,
+            )
         disp = cls(tables=tables, calibration_errors=errors, effective_rows=eff,
                    min_rows=min_rows, judged=judged)
         return disp.plot(ax=ax)
