@@ -65,3 +65,32 @@ def test_display_draws_the_other_groups_and_names_the_weightless_one(nafld):
                                                         sample_weight=hl.sample_weight)
     assert list(disp.lines_) == ["earlier"]
     plt.close("all")
+
+
+def test_multiclass_report_lists_a_weightless_group_without_numpy_warnings():
+    """The multiclass report's by-group table (scikit-learn's wine, every tenth row in a group of
+    weight 0): before, numpy's 0 / 0 warning, and with costs ``np.average`` stopped the report
+    (ZeroDivisionError). Reference for the other group: its rows' mean cost by hand."""
+    from sklearn.datasets import load_wine
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.model_selection import cross_val_predict
+
+    from probwrap.report import build_report
+
+    X, y = load_wine(return_X_y=True)
+    X = (X - X.mean(0)) / X.std(0)
+    p = cross_val_predict(LogisticRegression(max_iter=1000), X, y, cv=5, method="predict_proba")
+    group = np.where(np.arange(len(y)) % 10 == 0, "weightless", "rest")
+    w = np.where(group == "weightless", 0.0, 1.0)
+    costs = 1.0 - np.eye(3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)
+        warnings.simplefilter("ignore", UserWarning)
+        content, _ = build_report(y_true=y, y_prob=p, groups=group, sample_weight=w,
+                                  costs=costs, n_resamples=10)
+    by = {c.group: c for c in content.group_checks.groups}
+    assert by["weightless"].weight == 0 and not by["weightless"].judged
+    assert np.isnan(by["weightless"].mean_cost)
+    rest = group == "rest"
+    chosen = np.argmin(p[rest] @ costs.T, axis=1)  # least expected cost per row
+    assert by["rest"].mean_cost == pytest.approx(costs[y[rest], chosen].mean(), rel=1e-12)

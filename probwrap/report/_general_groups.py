@@ -118,12 +118,17 @@ def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, l
         return float(res.confidence_interval.low), float(res.confidence_interval.high)
 
     total = float(w.sum())
-    observed = np.bincount(y, weights=w, minlength=k) / total
-    forecast = (w @ p) / total
     shares = mean_cost = None
-    if actions is not None:
-        shares = np.bincount(actions, weights=w, minlength=n_actions) / total
-        mean_cost = float(np.average(row_cost, weights=w))
+    if total > 0:
+        observed = np.bincount(y, weights=w, minlength=k) / total
+        forecast = (w @ p) / total
+        if actions is not None:
+            shares = np.bincount(actions, weights=w, minlength=n_actions) / total
+            mean_cost = float(np.average(row_cost, weights=w))
+    else:  # every row of weight 0 (late labels all open): NaN, not numpy's 0 / 0 warning
+        observed = forecast = np.full(k, nan)
+        if actions is not None:
+            shares = np.full(n_actions, nan)
     return ClassGroupCheck(
         group=group, weight=total, effective_rows=eff, rarest_class_rows=rarest, judged=judged,
         top_label_error=value(expected_calibration_error, n_bins=n_bins),
