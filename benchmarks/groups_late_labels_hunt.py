@@ -268,6 +268,17 @@ def late_labels(quick: bool) -> None:
               f"{hl.sample_weight[sex == c.group].sum():.0f}); Brier {c.brier:.5f} vs sklearn "
               f"{brier_score_loss(hl.y[rows], p5[rows], sample_weight=hl.sample_weight[rows]):.5f}")
     print(f"     warnings: {sorted({str(w.message)[:100] for w in caught})}")
+    # a recent cohort: the 100 open rows followed the shortest time carry weight 0 on every row
+    recent = np.zeros(len(t), dtype=bool)
+    recent[np.flatnonzero(hl.is_open)[np.argsort(t[hl.is_open], kind="stable")[:100]]] = True
+    cohort = np.where(recent, "recent", "earlier")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        r = calibration_by_group(hl.y, p5, cohort, sample_weight=hl.sample_weight, n_resamples=20)
+    rec = next(c for c in r.groups if c.group == "recent")
+    print(f"     a cohort all open (weight 0): listed {rec.weight:g}, judged {rec.judged}; note "
+          f"{[n[:60] for n in r.notes if 'recent' in n and 'weight 0' in n]}; RuntimeWarnings "
+          f"{sum(w.category is RuntimeWarning for w in caught)}")
     first = float(t[e == 1].min())
     hl = labels_at_horizon(t, e, first / 2)
     print(f"   horizon {first / 2:g} d, before the first death ({first:g} d): positives "
@@ -339,6 +350,15 @@ def alarms(quick: bool) -> None:
     print(f"   signed shift scores {z.min():.2f}..{z.max():.2f}; shift p-value < 0.01 in "
           f"{int(np.sum(tab['shift_pvalue'] < 0.01))} of {len(tab)} weeks")
     print(f"   warnings: {sorted({w.category.__name__ for w in caught})}")
+    bad = week[rest].astype(float)
+    bad[40] = np.nan
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            t2 = m.monitor(X[rest], batches=bad)
+        print(f"   a NaN week label: accepted, {len(t2)} batches (one of them 'nan')")
+    except ValueError as exc:
+        print(f"   a NaN week label: ValueError: {str(exc)[:80]}")
     for w in caught:
         if w.category.__name__ == "ClassMixtureMisfitWarning":
             print(f"   first ClassMixtureMisfitWarning: {str(w.message)[:300]}")
