@@ -107,6 +107,15 @@ class PriorEstimate:
         1 % a :class:`~probwrap.shift.ClassMixtureMisfitWarning`; since 5 December 2026). None
         with more than two classes, with cells, for rows not at hand, or with fewer than 15
         effective rows in the batch or in a labelled class.
+    labelled_row_share : float or None
+        Set by ``PriorShiftWrapper.adapt`` for a model refit on its labelled rows (rows in
+        memory): the share of the unlabelled rows (by weight) whose feature row is also among
+        the labelled rows. The refit model's posteriors of those rows are not the cross-fitted
+        ones the predicted no-shift harm was read from, so where the shift test's p-value is at
+        least 0.10 :func:`~probwrap._prior_shift.evidence_gate` holds the move to
+        ``2 % * (1 - labelled_row_share)`` of that harm instead of 2 % (since session 29).
+        None otherwise (a frozen model, Dask or Spark rows, inputs whose rows cannot be
+        hashed, estimates made outside the wrapper): the 2 % cap as before.
     """
 
     prior: np.ndarray
@@ -127,6 +136,7 @@ class PriorEstimate:
     null_move_ratio: float | None = None
     all_shares_interval: np.ndarray | None = None
     mixture_misfit_pvalue: float | None = None
+    labelled_row_share: float | None = None
 
 
 

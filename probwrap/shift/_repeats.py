@@ -61,6 +61,8 @@ __all__ = [
     "excess_repeats",
     "collision_bound",
     "identical_row_codes",
+    "feature_row_keys",
+    "labelled_row_share",
     "labelled_clumps",
     "labelled_repeat_counts",
     "repeats_beyond_chance",
@@ -130,6 +132,74 @@ def identical_row_codes(*blocks: np.ndarray) -> np.ndarray:
     """Codes ``0 .. G - 1`` of the rows, equal where the rows agree exactly in every block
     (arrays of shape (n, ...) of floats: the posteriors of one or more models)."""
     return _codes_of(_row_matrix(*blocks))
+
+
+def feature_row_keys(X) -> np.ndarray | None:
+    """A 64-bit hash of every row's features, equal where two rows agree in every feature:
+    numbers (a 2-d numeric NumPy array, or a DataFrame of numeric and boolean columns) read as
+    float64 and hashed by :func:`probwrap._heldout._row_hashes`, so a DataFrame and the same
+    numbers as an array, or an integer and a float column of equal values, give equal keys;
+    other DataFrames by pandas' row hash (equal only between frames of the same columns and
+    dtypes). None for anything else (sparse matrices, object arrays, Dask or Spark rows).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import pandas as pd
+    >>> keys = feature_row_keys(np.array([[1.0, 2.0], [1.0, 2.0], [2.0, 1.0]]))
+    >>> bool(keys[0] == keys[1]), bool(keys[0] == keys[2])
+    (True, False)
+    >>> frame = pd.DataFrame({"a": [1, 1, 2], "b": [2, 2, 1]})   # integer columns
+    >>> bool(np.array_equal(feature_row_keys(frame), keys))
+    True
+    """
+    from .._heldout import _is_dask, _row_hashes
+
+    try:
+        if hasattr(X, "iloc") and hasattr(X, "columns") and not _is_dask(X):
+            if all(getattr(d, "kind", "O") in "biuf" for d in np.atleast_1d(X.dtypes)):
+                return _row_hashes(X.to_numpy(dtype=float))
+            import pandas as pd
+
+            return pd.util.hash_pandas_object(X, index=False).to_numpy(dtype=np.uint64)
+        if isinstance(X, np.ndarray) and X.ndim == 2 and X.dtype.kind in "biuf":
+            return _row_hashes(X)
+    except (TypeError, ValueError):
+        return None
+    return None
+
+
+def labelled_row_share(labelled_keys: np.ndarray | None, keys: np.ndarray | None,
+                       sample_weight: np.ndarray | None = None) -> float | None:
+    """The share of the rows (by weight; unit weights for None) whose feature row is also
+    among the labelled rows: ``keys`` the rows' :func:`feature_row_keys`, ``labelled_keys``
+    the labelled rows' distinct keys, sorted. None where either is None, there are no rows or
+    their weights do not sum to a positive finite number.
+
+    ``PriorShiftWrapper`` reads it for a model refit on the labelled rows, whose posteriors of
+    a row it was fitted on are not the cross-fitted ones its calibration and the per-draw cap's
+    predicted harm were read from (docs/evidence/prior_shift_log.md, "Per-draw cap on repeated
+    rows (session 29)").
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> labelled = np.unique(feature_row_keys(np.array([[0.0], [1.0]])))
+    >>> labelled_row_share(labelled, feature_row_keys(np.array([[1.0], [2.0], [3.0], [1.0]])))
+    0.5
+    """
+    if labelled_keys is None or keys is None or keys.shape[0] == 0:
+        return None
+    ref = np.asarray(labelled_keys)
+    at = np.minimum(np.searchsorted(ref, keys), max(ref.shape[0] - 1, 0))
+    seen = (ref[at] == keys) if ref.shape[0] else np.zeros(keys.shape[0], dtype=bool)
+    if sample_weight is None:
+        return float(np.mean(seen))
+    w = np.asarray(sample_weight, dtype=float)
+    total = float(w.sum())
+    if not (np.isfinite(total) and total > 0):
+        return None
+    return float(w[seen].sum() / total)
 
 
 def _rows_surely_distinct(m: np.ndarray) -> bool:
