@@ -22,7 +22,9 @@ weight applied is scored exactly):
 * ``warn ... harm>X`` -- the move made in full; ``NoShiftHarmWarning`` where 0.01 <= p < 0.05
   and the predicted no-shift harm of the move (``draw_harm``) exceeds X;
 * ``refit repeat cap`` -- for refit models at p >= 0.10 the per-draw cap aiming at
-  2 % x (1 - share of batch rows also labelled) (``azprocedure``'s coarse repeated rows).
+  2 % x (1 - share of batch rows also labelled) (``azprocedure``'s coarse repeated rows);
+  applied in the library since session 29 (``PriorEstimate.labelled_row_share``), so on that
+  code ``current`` includes it and this rule changes nothing.
 
 Printed per rule: no-shift cells above 1.02 (all; quiet, i.e. with no warning from ``adapt`` or
 the rule), warnings the rule adds (on otherwise quiet cells; on cells without a

@@ -158,7 +158,12 @@ def feature_row_keys(X) -> np.ndarray | None:
     try:
         if hasattr(X, "iloc") and hasattr(X, "columns") and not _is_dask(X):
             if all(getattr(d, "kind", "O") in "biuf" for d in np.atleast_1d(X.dtypes)):
-                return _row_hashes(X.to_numpy(dtype=float))
+                # by blocks of rows: a row's hash is its own, and no float copy of a large
+                # frame is made at once
+                step = 1 << 16
+                return np.concatenate([
+                    _row_hashes(X.iloc[i:i + step].to_numpy(dtype=float))
+                    for i in range(0, X.shape[0], step)] or [np.zeros(0, dtype=np.uint64)])
             import pandas as pd
 
             return pd.util.hash_pandas_object(X, index=False).to_numpy(dtype=np.uint64)
