@@ -174,3 +174,22 @@ def test_share_read_alike_from_frames_arrays_and_weights():
     w = np.array([1.0, 1.0, 6.0, 0.0])
     assert labelled_row_share(keys, feature_row_keys(rows), w) == 0.25
     assert feature_row_keys([[1, 2]]) is None
+
+
+def test_dask_rows_carry_no_share_and_keep_the_two_percent_cap():
+    """Dask rows are not hashed against the labelled rows: no share (None), the 2 % cap as
+    before, where the same rows in memory (coarse features, every row also labelled) carry 1."""
+    da = pytest.importorskip("dask.array")
+    rng = np.random.default_rng(0)
+    X = rng.integers(0, 3, size=(600, 3)).astype(float)
+    y = (rng.uniform(size=600) < 0.2 + 0.2 * X[:, 0]).astype(int)
+    psw = PriorShiftWrapper(RandomForestClassifier(n_estimators=20, random_state=0),
+                            random_state=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        psw.fit(X[:200], y[:200]).adapt(X[200:])
+        assert psw.prior_estimate_.labelled_row_share == 1.0
+        psw.adapt(da.from_array(X[200:], chunks=100))
+    res = psw.prior_estimate_
+    assert res.labelled_row_share is None
+    assert psw.adaptation_weight_ == evidence_gate(res, 2, psw.max_harm, psw.min_evidence)[0]
