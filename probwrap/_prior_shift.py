@@ -1288,133 +1288,129 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         # says both; since session 29), not as a second warning of the same class
         est._rank_notes = []
         try:
-            return self._adapt(X, sample_weight, cells)
+            self._check_features(X, "passed to adapt")
+            refuse_distributed(self, X, sample_weight)
+            est = self.prior_estimator_
+            rs = self.random_state
+            source = getattr(self, "_source_tally", None)
+            target = None
+            share = None  # (labelled_row_share: rows in memory, a model refit here)
+            multiclass = self.classes_.shape[0] > 2
+            if cells is not None:
+                cells = self._dask_cells(X, sample_weight, cells, source)
+            if isinstance(cells, str) and _is_dask(X) and not hasattr(X, "__dask_graph__"):
+                # a Spark frame's cells column: at most 20,000 rows come to the client with their
+                # cells (and fold posteriors) from one pass, and adapt runs as in memory
+                from .scale._entry import spark_cells_rows
+
+                proba, folds, sample_weight, cells = spark_cells_rows(
+                    self.estimator_, X, sample_weight, cells, self._fold_scorer(),
+                    self.classes_.shape[0])
+                if sample_weight is not None:
+                    sample_weight = rescale_extreme_weights(
+                        check_sample_weight(sample_weight, proba.shape[0]), "PriorShiftWrapper.adapt")
+                self._warn_refit_left_out(folds)
+                res = est.estimate(proba, sample_weight, random_state=rs, fold_proba=folds,
+                                   cells=cells)
+                self._finish_adapt(res, res.interval)
+                run_feature_check(self, X, sample_weight, cells)
+                return self
+            if multiclass and (_is_dask(X) or _is_dask(sample_weight)):
+                # Multiclass Dask rows: EM / BBSE as reductions over the calibrated posteriors on
+                # the workers (one pass per EM iteration); with the analytic interval (EM).
+                from .scale._entry import estimate_multiclass_target
+
+                scorer = self._fold_scorer()
+                came: list = []  # (a small set's rows come to the client: their ML shares)
+                res = estimate_multiclass_target(
+                    est, self.estimator_, X, sample_weight, rs, folds=scorer, cells=cells,
+                    check_rows=None if cells is not None else (
+                        lambda p, f, w: came.append((p, w))))
+                if cells is None:
+                    # the rows' repeats, counted where they live whatever their number
+                    # (RepeatedRowsWarning; beyond 20,000 rows since 5 December 2026, session 25)
+                    ml = (ml_shares(est, *came[0]) if came else
+                          res.ml_prior if res.ml_prior is not None else res.prior)
+                    self._warn_repeats_where_rows_live(X, sample_weight, ml, stacklevel=3)
+                # (the fold models scored the rows where they live whenever there are any, and
+                # every interval computed here reads them: a small set's in-memory estimate with
+                # fold_proba, any interval; more rows, EM's class-moment interval; no warning)
+                self._finish_adapt(res, res.interval)
+                run_feature_check(self, X, sample_weight, cells)
+                return self
+            if _is_dask(X) or _is_dask(sample_weight):
+                # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is
+                # estimated from the tally's weighted rows. Bootstrapping tally rows would not
+                # resample the original rows, so the interval comes from Poisson replicates tallied
+                # alongside.
+                from .scale._entry import owner_resolution, unlabelled_proba_from_dask
+
+                given_weight = sample_weight
+                # a refit base model: the fold models score a small set's rows where they live (a
+                # larger set comes back as a tally of the refit model's score, without them)
+                proba, sample_weight, target, folds = unlabelled_proba_from_dask(
+                    self.estimator_, X, sample_weight, n_replicates=est.n_resamples,
+                    random_state=rs, resolution=owner_resolution(self), folds=self._fold_scorer(),
+                    # more rows: the fold models' scores as sums for the score interval and test,
+                    # and as a tally of every row once per fold model for the estimate; a
+                    # bootstrap interval draws Poisson replicates of that tally in the same pass
+                    # (one draw per row, shared by its fold copies; since 4 December 2026, before
+                    # it drew from the refit model's tally and everything read that)
+                    moments_of=est,
+                    fold_replicates=0 if self.interval == "score" else int(est.n_resamples),
+                    cells=cells is not None,
+                )
+                if cells is None:
+                    # the rows' repeats, counted where they live by their features (where the
+                    # labelled rows' were read at fit) or posteriors, whatever their number (since
+                    # 5 December 2026, session 25; before, only a small set whose rows came to the
+                    # client, by posteriors); the ML shares of the rows, or of a larger set's tally
+                    self._warn_repeats_where_rows_live(
+                        X, given_weight, ml_shares(est, proba, sample_weight),
+                        n_rows=proba.shape[0] if target is None else target.n_rows)
+            else:
+                proba = self._inner_output(X, "predict_proba")
+                if sample_weight is not None:
+                    # as at fit: weights beyond about 1e+-77 are taken as relative ones (exact power
+                    # of two), since the estimators' sums of squares overflow or underflow there
+                    sample_weight = rescale_extreme_weights(
+                        check_sample_weight(sample_weight, proba.shape[0]), "PriorShiftWrapper.adapt"
+                    )
+                folds = self._fold_proba(X)
+                if cells is None:
+                    # rows repeating one another beyond chance (resampled or copied rows): the
+                    # interval and the shift test count them as independent (RepeatedRowsWarning);
+                    # rows in memory are grouped by their features as well (since 5 December 2026)
+                    self._warn_repeats(proba, folds, sample_weight,
+                                       row_codes=self._unlabelled_row_codes(X))
+                share = self._labelled_row_share(X, sample_weight)
+            poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
+                self.interval == "score" and not multiclass
+            )
+            self._warn_refit_left_out(
+                folds if (not poisson or getattr(folds, "row_replicates", None) is not None)
+                else None)
+            if poisson:
+                # Some rows are tallied: one Poisson bootstrap over tallied and in-memory rows alike
+                # (after a refit, over the rows once per fold model, with their replicates)
+                res, interval = tallied_adapt(est, source, target, proba, sample_weight, rs,
+                                              self.classes_.shape[0], folds=folds)
+            else:
+                rows = None if target is None else _tally_rows(target)
+                res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
+                                   fold_proba=folds, cells=cells)
+                interval = res.interval
+            if share is not None:
+                # the per-draw cap reads it (evidence_gate; the report moves alike)
+                from dataclasses import replace
+
+                res = replace(res, labelled_row_share=share)
+            self._finish_adapt(res, interval)
+            # the opt-in feature check (feature_check_rows; rows in memory only)
+            run_feature_check(self, X, sample_weight, cells)
+            return self
         finally:
             est.__dict__.pop("_rank_notes", None)
-
-    def _adapt(self, X: Any, sample_weight: Any, cells: Any) -> PriorShiftWrapper:
-        """The body of :meth:`adapt` (which keeps the estimator's rank note meanwhile)."""
-        self._check_features(X, "passed to adapt")
-        refuse_distributed(self, X, sample_weight)
-        est = self.prior_estimator_
-        rs = self.random_state
-        source = getattr(self, "_source_tally", None)
-        target = None
-        share = None  # (labelled_row_share: rows in memory, a model refit here)
-        multiclass = self.classes_.shape[0] > 2
-        if cells is not None:
-            cells = self._dask_cells(X, sample_weight, cells, source)
-        if isinstance(cells, str) and _is_dask(X) and not hasattr(X, "__dask_graph__"):
-            # a Spark frame's cells column: at most 20,000 rows come to the client with their
-            # cells (and fold posteriors) from one pass, and adapt runs as in memory
-            from .scale._entry import spark_cells_rows
-
-            proba, folds, sample_weight, cells = spark_cells_rows(
-                self.estimator_, X, sample_weight, cells, self._fold_scorer(),
-                self.classes_.shape[0])
-            if sample_weight is not None:
-                sample_weight = rescale_extreme_weights(
-                    check_sample_weight(sample_weight, proba.shape[0]), "PriorShiftWrapper.adapt")
-            self._warn_refit_left_out(folds)
-            res = est.estimate(proba, sample_weight, random_state=rs, fold_proba=folds,
-                               cells=cells)
-            self._finish_adapt(res, res.interval)
-            run_feature_check(self, X, sample_weight, cells)
-            return self
-        if multiclass and (_is_dask(X) or _is_dask(sample_weight)):
-            # Multiclass Dask rows: EM / BBSE as reductions over the calibrated posteriors on
-            # the workers (one pass per EM iteration); with the analytic interval (EM).
-            from .scale._entry import estimate_multiclass_target
-
-            scorer = self._fold_scorer()
-            came: list = []  # (a small set's rows come to the client: their ML shares)
-            res = estimate_multiclass_target(
-                est, self.estimator_, X, sample_weight, rs, folds=scorer, cells=cells,
-                check_rows=None if cells is not None else (
-                    lambda p, f, w: came.append((p, w))))
-            if cells is None:
-                # the rows' repeats, counted where they live whatever their number
-                # (RepeatedRowsWarning; beyond 20,000 rows since 5 December 2026, session 25)
-                ml = (ml_shares(est, *came[0]) if came else
-                      res.ml_prior if res.ml_prior is not None else res.prior)
-                self._warn_repeats_where_rows_live(X, sample_weight, ml, stacklevel=3)
-            # (the fold models scored the rows where they live whenever there are any, and
-            # every interval computed here reads them: a small set's in-memory estimate with
-            # fold_proba, any interval; more rows, EM's class-moment interval; no warning)
-            self._finish_adapt(res, res.interval)
-            run_feature_check(self, X, sample_weight, cells)
-            return self
-        if _is_dask(X) or _is_dask(sample_weight):
-            # Unlabelled Dask rows: their posteriors are tallied on the cluster, and the prior is
-            # estimated from the tally's weighted rows. Bootstrapping tally rows would not
-            # resample the original rows, so the interval comes from Poisson replicates tallied
-            # alongside.
-            from .scale._entry import owner_resolution, unlabelled_proba_from_dask
-
-            given_weight = sample_weight
-            # a refit base model: the fold models score a small set's rows where they live (a
-            # larger set comes back as a tally of the refit model's score, without them)
-            proba, sample_weight, target, folds = unlabelled_proba_from_dask(
-                self.estimator_, X, sample_weight, n_replicates=est.n_resamples,
-                random_state=rs, resolution=owner_resolution(self), folds=self._fold_scorer(),
-                # more rows: the fold models' scores as sums for the score interval and test,
-                # and as a tally of every row once per fold model for the estimate; a
-                # bootstrap interval draws Poisson replicates of that tally in the same pass
-                # (one draw per row, shared by its fold copies; since 4 December 2026, before
-                # it drew from the refit model's tally and everything read that)
-                moments_of=est,
-                fold_replicates=0 if self.interval == "score" else int(est.n_resamples),
-                cells=cells is not None,
-            )
-            if cells is None:
-                # the rows' repeats, counted where they live by their features (where the
-                # labelled rows' were read at fit) or posteriors, whatever their number (since
-                # 5 December 2026, session 25; before, only a small set whose rows came to the
-                # client, by posteriors); the ML shares of the rows, or of a larger set's tally
-                self._warn_repeats_where_rows_live(
-                    X, given_weight, ml_shares(est, proba, sample_weight),
-                    n_rows=proba.shape[0] if target is None else target.n_rows)
-        else:
-            proba = self._inner_output(X, "predict_proba")
-            if sample_weight is not None:
-                # as at fit: weights beyond about 1e+-77 are taken as relative ones (exact power
-                # of two), since the estimators' sums of squares overflow or underflow there
-                sample_weight = rescale_extreme_weights(
-                    check_sample_weight(sample_weight, proba.shape[0]), "PriorShiftWrapper.adapt"
-                )
-            folds = self._fold_proba(X)
-            if cells is None:
-                # rows repeating one another beyond chance (resampled or copied rows): the
-                # interval and the shift test count them as independent (RepeatedRowsWarning);
-                # rows in memory are grouped by their features as well (since 5 December 2026)
-                self._warn_repeats(proba, folds, sample_weight,
-                                   row_codes=self._unlabelled_row_codes(X))
-            share = self._labelled_row_share(X, sample_weight)
-        poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
-            self.interval == "score" and not multiclass
-        )
-        self._warn_refit_left_out(
-            folds if (not poisson or getattr(folds, "row_replicates", None) is not None)
-            else None)
-        if poisson:
-            # Some rows are tallied: one Poisson bootstrap over tallied and in-memory rows alike
-            # (after a refit, over the rows once per fold model, with their replicates)
-            res, interval = tallied_adapt(est, source, target, proba, sample_weight, rs,
-                                          self.classes_.shape[0], folds=folds)
-        else:
-            rows = None if target is None else _tally_rows(target)
-            res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
-                               fold_proba=folds, cells=cells)
-            interval = res.interval
-        if share is not None:
-            # the per-draw cap reads it (evidence_gate; the report moves alike)
-            from dataclasses import replace
-
-            res = replace(res, labelled_row_share=share)
-        self._finish_adapt(res, interval)
-        # the opt-in feature check (feature_check_rows; rows in memory only)
-        run_feature_check(self, X, sample_weight, cells)
-        return self
 
     def _labelled_row_share(self, X: Any, sample_weight: Any) -> float | None:
         """The share of the rows ``X`` (by weight) whose feature row is also among the labelled
