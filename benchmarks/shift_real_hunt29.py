@@ -58,6 +58,7 @@ import numpy as np
 import pandas as pd
 import shift_real_hunt24 as h24
 import shift_real_hunt28 as h28
+from _hunt_data import complete_rows
 from shift_real_hunt24 import _r, _warnings, _x, one
 from shift_real_hunt26 import summarise
 from sklearn.frozen import FrozenEstimator
@@ -76,15 +77,7 @@ def sets():
     out = []
 
     def add(name, X, y, max_rows=4000, seed=0):
-        X = X.reset_index(drop=True)
-        X = X.loc[:, X.isna().mean() <= 0.2]
-        y = np.asarray(y).astype(str)
-        ok = X.notna().all(axis=1).to_numpy() & (y != "nan")
-        X, y = X[ok].reset_index(drop=True), y[ok]
-        if len(y) > max_rows:
-            idx = np.sort(np.random.default_rng(seed).choice(len(y), max_rows, replace=False))
-            X, y = X.iloc[idx].reset_index(drop=True), y[idx]
-        out.append((name, X, y))
+        out.append((name, *complete_rows(X, y, max_rows, seed)))
 
     d = _r("AER", "PSID1982")
     add("PSID1982 female (11%)", _x(d, ["gender"]), d["gender"] == "female")
