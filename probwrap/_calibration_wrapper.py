@@ -28,6 +28,7 @@ from ._weights import warn_count_reading, warn_shared_factor_table
 from .calibration._base import (
     CalibrationMap,
     FewClassRowsWarning,
+    UnverifiedSharpeningWarning,
     one_vs_rest_copy,
 )
 from .calibration._binning import BinningMap
@@ -48,6 +49,15 @@ _ORDER_BASED = (IsotonicMap, BinningMap, VennAbersMap)
 #: held-out rows than this: the common-practice minimum count per cell (Cochran 1954), as for
 #: PriorShiftWrapper's labelled rows.
 FEW_CLASS_ROWS = 5
+
+#: A map that sharpens (temperature below 1, Platt slope above 1) fitted on fewer held-out
+#: rows of weight > 0 than this, whose held-out scores misrank at most
+#: ``_SEPARATED_MISRANKED_SHARE`` of the pairs of one row of each class, warns
+#: (UnverifiedSharpeningWarning): so few rows cannot tell a chance separation from a real one.
+#: 100 is the Platt-first bound of ``auto`` on cross-fitted rows; the DAAG nsw74psidA draws of
+#: the session-29 hunt misranked 0-3 of ~220 pairs (at most 1.4 %).
+_SHARPENING_CHECK_MAX_ROWS = 100
+_SEPARATED_MISRANKED_SHARE = 0.02
 
 #: One-vs-rest log-odds come from one logsumexp over all classes up to this many classes: the
 #: sums over the k - 1 other classes are then plain left-to-right sums whichever way NumPy runs
@@ -481,7 +491,55 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         if self.method == "auto":
             self._cap_level_sharpening(scores, ho, w)
             self._drop_class_scales_fitted_to_level(scores, ho, w)
+        self._warn_unverified_sharpening(scores, ho, w)
         return self
+
+    def _warn_unverified_sharpening(self, scores: np.ndarray, ho: Any, w: np.ndarray) -> None:
+        """Warn (``UnverifiedSharpeningWarning``; the map is unchanged) when a binary map fitted
+        on fewer than ``_SHARPENING_CHECK_MAX_ROWS`` held-out rows of weight > 0 sharpens the
+        scores (a temperature below 1, a Platt slope above 1) while those scores misrank at
+        most ``_SEPARATED_MISRANKED_SHARE`` of the weighted pairs of one row of each class
+        (ties count half). A cap on such sharpening was tried in session 29 and reverted: it
+        also removed right sharpenings on sets that really are separable, which the same few
+        rows cannot tell from a lucky draw (docs/evidence/small_data_log.md)."""
+        if scores.ndim != 1:
+            return
+        m = self.calibrator_
+        temperature = getattr(m, "temperature_", None)
+        slope = getattr(m, "slope_", None)
+        if isinstance(m, PlattMap) and slope is not None and slope > 1.0:
+            how = f"a Platt slope of {slope:.3g}"
+        elif temperature is not None and temperature < 1.0:
+            how = f"a temperature of {temperature:.3g}"
+        else:
+            return
+        keep = np.asarray(w, dtype=float) > 0
+        n = int(keep.sum())
+        if n >= _SHARPENING_CHECK_MAX_ROWS:
+            return
+        s, wk = np.asarray(scores, dtype=float)[keep], np.asarray(w, dtype=float)[keep]
+        pos = np.asarray(ho.y_index)[keep] == 1
+        if pos.all() or not pos.any():
+            return
+        sp, sn, wp, wn = s[pos], s[~pos], wk[pos], wk[~pos]
+        pair_w = np.outer(wp, wn)
+        wrong = float(np.sum(pair_w * ((sp[:, None] < sn[None, :])
+                                       + 0.5 * (sp[:, None] == sn[None, :]))))
+        share = wrong / float(pair_w.sum())
+        if share > _SEPARATED_MISRANKED_SHARE:
+            return
+        pairs = int(pos.sum()) * int((~pos).sum())
+        warnings.warn(
+            f"CalibrationWrapper({self._method_asked()}): the map sharpens the scores ({how}) "
+            f"fitted on {n} held-out rows whose scores misrank {100 * share:.2g} % of the "
+            f"{pairs} pairs of one row of each class, i.e. (nearly) separate the classes. So "
+            "few rows cannot tell a real separation from a draw that separates them by "
+            "chance: the sharpness is unverified, and the probabilities may be overconfident "
+            "on new rows. Label more rows, or use method='platt' (its smoothed targets "
+            "regularise the slope).",
+            UnverifiedSharpeningWarning,
+            stacklevel=3,
+        )
 
     def _fit_on_heldout(self, ho: Any) -> CalibrationWrapper:
         """The calibration map (and ``method="auto"``'s choice) on held-out predictions."""

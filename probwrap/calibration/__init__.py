@@ -5,6 +5,7 @@ from ._base import (
     CalibrationMap,
     ExactZeroFloorWarning,
     FewClassRowsWarning,
+    UnverifiedSharpeningWarning,
     WeightScaleWarning,
 )
 from ._beta import BetaMap
@@ -34,6 +35,7 @@ __all__ = [
     "NONPARAMETRIC",
     "PlattMap",
     "TemperatureMap",
+    "UnverifiedSharpeningWarning",
     "VectorScalingMap",
     "VennAbersMap",
     "WeightScaleWarning",
