@@ -496,7 +496,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
 
     def _warn_unverified_sharpening(self, scores: np.ndarray, ho: Any, w: np.ndarray) -> None:
         """Warn (``UnverifiedSharpeningWarning``; the map is unchanged) when a binary map fitted
-        on fewer than ``_SHARPENING_CHECK_MAX_ROWS`` held-out rows of weight > 0 sharpens the
+        on fewer than ``_SHARPENING_CHECK_MAX_ROWS`` held-out rows of weight > 0
+        (``class_row_counts``: a count table's cases, a score tally's original rows) sharpens the
         scores (a temperature below 1, a Platt slope above 1) while those scores misrank at
         most ``_SEPARATED_MISRANKED_SHARE`` of the weighted pairs of one row of each class
         (ties count half). A cap on such sharpening was tried in session 29 and reverted: it
@@ -513,10 +514,12 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             how = f"a temperature of {temperature:.3g}"
         else:
             return
-        keep = np.asarray(w, dtype=float) > 0
-        n = int(keep.sum())
+        # rows as every row count of the wrapper reads them: a count table's whole-number
+        # weights count its cases, a Dask score tally's rows the original rows
+        n = int(np.sum(ho.class_row_counts(w)))
         if n >= _SHARPENING_CHECK_MAX_ROWS:
             return
+        keep = np.asarray(w, dtype=float) > 0
         s, wk = np.asarray(scores, dtype=float)[keep], np.asarray(w, dtype=float)[keep]
         pos = np.asarray(ho.y_index)[keep] == 1
         if pos.all() or not pos.any():

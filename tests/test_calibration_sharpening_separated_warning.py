@@ -117,3 +117,18 @@ def test_named_temperature_on_frozen_separated_rows_warns() -> None:
             assert len(hits) == expect, (n, w.calibrator_.temperature_)
         else:  # pragma: no cover - the draw is fixed; this says why the test would be void
             pytest.fail(f"the draw no longer sharpens separated rows (n={n})")
+
+
+def test_whole_number_weights_count_as_rows() -> None:
+    """Whole-number weights are counts (docs/weights.md): the 30 breast-cancer rows above,
+    weighing 4 and 7 in turn, are 165 cases, beyond the warning's 100 rows; the draw still sharpens and
+    separates. Before the row count read the weights, 30 weighted rows warned."""
+    data = load_breast_cancer()
+    rows = _draw(data.target, 30, 0)
+    X, y = data.data[rows], data.target[rows]
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        model = CalibrationWrapper(make_pipeline(StandardScaler(), LogisticRegression()),
+                                   random_state=0).fit(X, y, sample_weight=np.tile([4.0, 7.0], 15))
+    assert model.calibrator_.temperature_ < 1.0
+    assert not [c for c in caught if issubclass(c.category, UnverifiedSharpeningWarning)]
