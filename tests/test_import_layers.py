@@ -26,6 +26,7 @@ LAYERS = {
     "_predictions": 0,
     "_version": 0,
     "_feature_input": 0,  # 1-d X / repeated column names refused before fitting (wrappers)
+    "_row_hash": 0,  # the 64-bit row key (copies kept in one fold; rows also labelled)
     "_packed_sort": 0,  # one-sort score order with the classes (cutoff search, isotonic fit)
     "calibration": 1,
     "decision": 1,

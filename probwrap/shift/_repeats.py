@@ -137,7 +137,7 @@ def identical_row_codes(*blocks: np.ndarray) -> np.ndarray:
 def feature_row_keys(X) -> np.ndarray | None:
     """A 64-bit hash of every row's features, equal where two rows agree in every feature:
     numbers (a 2-d numeric NumPy array, or a DataFrame of numeric and boolean columns) read as
-    float64 and hashed by :func:`probwrap._heldout._row_hashes`, so a DataFrame and the same
+    float64 and hashed by :func:`probwrap._row_hash.row_hashes`, so a DataFrame and the same
     numbers as an array, or an integer and a float column of equal values, give equal keys;
     other DataFrames by pandas' row hash (equal only between frames of the same columns and
     dtypes). None for anything else (sparse matrices, object arrays, Dask or Spark rows).
@@ -153,10 +153,12 @@ def feature_row_keys(X) -> np.ndarray | None:
     >>> bool(np.array_equal(feature_row_keys(frame), keys))
     True
     """
-    from .._heldout import _is_dask, _row_hashes
+    from .._row_hash import row_hashes as _row_hashes
 
+    # Dask collections and Spark DataFrames (checked without importing either) are not hashed
+    where_rows_live = hasattr(X, "__dask_graph__") or type(X).__module__.startswith("pyspark.sql")
     try:
-        if hasattr(X, "iloc") and hasattr(X, "columns") and not _is_dask(X):
+        if hasattr(X, "iloc") and hasattr(X, "columns") and not where_rows_live:
             if all(getattr(d, "kind", "O") in "biuf" for d in np.atleast_1d(X.dtypes)):
                 # by blocks of rows: a row's hash is its own, and no float copy of a large
                 # frame is made at once
