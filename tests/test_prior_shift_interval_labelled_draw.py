@@ -136,7 +136,10 @@ def test_exam_draw_the_old_interval_missed_quietly_is_covered(monkeypatch):
 
     monkeypatch.setattr(analytic, "SPREAD_FLOOR", False)
     old, truth, old_warned = _exam_cell()
-    assert not _covers(old, truth) and old_warned == []
+    # no warning about the interval (since session 29 a shift test rejecting between p = 0.01
+    # and 0.05 adds NoShiftHarmWarning, which speaks of the move's cost were nothing shifted,
+    # not of the interval; this draw is shifted and its test rejects in that band)
+    assert not _covers(old, truth) and set(old_warned) <= {"NoShiftHarmWarning"}
     monkeypatch.setattr(analytic, "SPREAD_FLOOR", True)
     new, truth_again, _ = _exam_cell()
     np.testing.assert_array_equal(truth, truth_again)
