@@ -101,7 +101,9 @@ def test_azprocedure_refit_forest_no_shift_move_held_below_two_percent():
         warnings.simplefilter("always")
         psw.adapt(Xu, sample_weight=np.ones(len(yu)))
     res = psw.prior_estimate_
-    assert res.shift_pvalue >= 0.10 and abs(res.shift_pvalue - 0.182) < 0.005
+    # 0.182 under scikit-learn 1.9, 0.174 under 1.6.1 (the forest's trees differ between
+    # releases); the rule acts from p = 0.10
+    assert res.shift_pvalue >= 0.10 and abs(res.shift_pvalue - 0.18) < 0.015
     # the share read independently: batch rows whose feature values equal a labelled row's
     labelled = {tuple(r) for r in XL.to_numpy().tolist()}
     share = np.mean([tuple(r) in labelled for r in Xu.to_numpy().tolist()])
@@ -109,7 +111,10 @@ def test_azprocedure_refit_forest_no_shift_move_held_below_two_percent():
     assert 0.15 < share < 0.16
     ratio = _log_loss(psw.predict_proba(Xu), col) / _log_loss(P0, col)
     assert 1.0 < ratio <= 1.02  # 1.0215 before (a move was still made: 1.0194)
-    assert not any(issubclass(w.category, NoShiftHarmWarning) for w in caught)
+    # no NoShiftHarmWarning under scikit-learn 1.9; under 1.6.1 (other trees) the full move's
+    # predicted harm is 2.1 % and the warning says the move made was held (38 % of the way)
+    said = [str(w.message) for w in caught if issubclass(w.category, NoShiftHarmWarning)]
+    assert all("the move made is held" in m for m in said), said
     # the move is held to 2 % * (1 - share) of predicted harm; the report moves alike
     assert draw_harm(res.null_harm_scale, res.null_move_ratio, res.shift_statistic,
                      psw.adaptation_weight_) == pytest.approx(0.02 * (1 - share), rel=1e-9)
