@@ -11,10 +11,9 @@ by row.
 
 from __future__ import annotations
 
-import tracemalloc
-
 import numpy as np
 import pytest
+from _memory_helpers import traced_peak
 from sklearn.datasets import load_breast_cancer, load_digits, load_iris, load_wine
 from sklearn.linear_model import LogisticRegression
 from sklearn.model_selection import cross_val_predict
@@ -114,12 +113,7 @@ def test_unit_weights_as_one_repeated_value_are_not_copied():
     p = rng.random(n)
     y = (rng.random(n) < 0.3).astype(np.int8)
     unit = np.broadcast_to(np.float64(1.0), n)
-    tracemalloc.start()
-    try:
-        _, _, w, _, _ = _prepare(p, y, COSTS, unit)
-        peak = tracemalloc.get_traced_memory()[1]
-    finally:
-        tracemalloc.stop()
+    peak, (_, _, w, _, _) = traced_peak(lambda: _prepare(p, y, COSTS, unit))
     assert w is None
     # the finite check of the scores takes one byte a row; the weights' copy took eight more
     assert peak < 2 * n

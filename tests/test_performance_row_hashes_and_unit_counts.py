@@ -7,12 +7,12 @@ work done (one hashing pass, the traced memory) fail on the code before.
 
 from __future__ import annotations
 
-import tracemalloc
 import warnings
 
 import numpy as np
 import pandas as pd
 import pytest
+from _memory_helpers import traced_peak
 from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 
@@ -126,12 +126,7 @@ def test_whole_counts_follows_its_definition(w):
 
 
 def _peak(fn):
-    tracemalloc.start()
-    try:
-        fn()
-        return tracemalloc.get_traced_memory()[1]
-    finally:
-        tracemalloc.stop()
+    return traced_peak(fn)[0]
 
 
 def test_unit_weights_are_counted_without_row_long_temporaries():
