@@ -10,7 +10,9 @@ other 30 %:
 * *feature batches*: the rows above the 50th or 70th, or below the 30th percentile of each of
   the three columns with the most distinct values (at most 400 rows);
 * *prior batches*: rows of each class resampled at a share drawn from U(0.15, 0.85), sizes as
-  the feature batches (prior shift holds: every check should fire about 1 % of the time).
+  the feature batches (prior shift holds: every check should fire about 1 % of the time). Since
+  session 30 no row is drawn twice (a batch shrinks where a class's pool is short; before, it
+  repeated rows, ``--repeat-rows``, which the checks count as independent).
 
 ``--part score`` compares score-only tests at the 1 % level: the library's check
 (:func:`~probwrap.shift.class_mixture_misfit`, 3-6 bins), the same statistic with up to 10 or
@@ -134,14 +136,28 @@ def batches(X, y, rest, rng, n_prior):
     for _ in range(n_prior):
         n = int(rng.choice(sizes))
         k1 = rng.binomial(n, rng.uniform(0.15, 0.85))
-        out.append(("prior", np.concatenate([rng.choice(i1, k1, replace=k1 > i1.size),
-                                             rng.choice(i0, n - k1, replace=n - k1 > i0.size)])))
+        if REPEAT_ROWS:
+            out.append(("prior", np.concatenate([rng.choice(i1, k1, replace=k1 > i1.size),
+                                                 rng.choice(i0, n - k1, replace=n - k1 > i0.size)])))
+            continue
+        # no row twice (session 30): where a class's pool is short of its count, the batch
+        # shrinks with the share kept; rows drawn again are not independent draws, and the
+        # check counts every row as one (Arrests' 270 pooled rows of "No": 8 % flagged)
+        scale = min(1.0, i1.size / max(k1, 1), i0.size / max(n - k1, 1))
+        k1, k0 = int(np.floor(k1 * scale)), int(np.floor((n - k1) * scale))
+        out.append(("prior", np.concatenate([rng.choice(i1, k1, replace=False),
+                                             rng.choice(i0, k0, replace=False)])))
     return out
 
 
-def run(part: str, seeds: int, n_prior: int, out: str) -> None:
+#: draw prior batches as before session 30: with replacement where a class's pool is short
+#: (``--repeat-rows``)
+REPEAT_ROWS = False
+
+
+def run(part: str, seeds: int, n_prior: int, out: str, sets=SETS) -> None:
     rows = []
-    for name in SETS:
+    for name in sets:
         X, y = load(name)
         if part == "feature":
             keep = X.notna().all(axis=1).to_numpy()
@@ -208,13 +224,18 @@ def main() -> None:
                     help="prior batches per seed (default 25 for score, 10 for feature)")
     ap.add_argument("--out", default="feature_selected_batches.csv")
     ap.add_argument("--summary", default=None)
+    ap.add_argument("--sets", default=",".join(SETS), help="comma-separated subset of " + ", ".join(SETS))
+    ap.add_argument("--repeat-rows", action="store_true",
+                    help="prior batches drawn with replacement where a class's pool is short (before session 30)")
     a = ap.parse_args()
+    global REPEAT_ROWS
+    REPEAT_ROWS = a.repeat_rows
     if a.summary:
         summary(a.summary)
         return
     n_prior = a.prior_batches if a.prior_batches is not None else (
         25 if a.part == "score" else 10)
-    run(a.part, a.seeds, n_prior, a.out)
+    run(a.part, a.seeds, n_prior, a.out, tuple(a.sets.split(",")))
 
 
 if __name__ == "__main__":
