@@ -334,7 +334,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         check_target_labels(y_arr, "y")
         check_classification_targets(y_arr)
         check_rows_match(X, y_arr.shape[0])
-        check_feature_input(X, self.estimator)
+        check_feature_input(X, self.estimator, y_arr)
         sw = check_sample_weight(sample_weight, y_arr.shape[0]) if sample_weight is not None else None
         y_index, classes = check_labels(y_arr, name="y")
         if sw is not None:

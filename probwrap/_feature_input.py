@@ -13,7 +13,16 @@ its end:
   feature-name check reads the columns through narwhals, "Expected unique column names");
   scikit-learn 1.6.1 accepts them, so they are refused here only where the installed
   scikit-learn refuses them (found once, by fitting a ``StandardScaler`` on a 2-column frame
-  with one name twice: :func:`_sklearn_refuses_repeated_names`).
+  with one name twice: :func:`_sklearn_refuses_repeated_names`);
+* the same frame given to a ``ColumnTransformer`` of a scikit-learn that accepts repeated
+  names (1.6.1): given a DataFrame to transform it selects its columns by name, so a repeated
+  name picked by position brings every column of that name, and the model fails on the
+  held-out rows (a 671-character "Cross-fitting ... failed on that fold's held-out rows"
+  message that spoke of rare categories); one picked by name fails its fit ("not unique in
+  dataframe", in a 571-character cross-fitting message). :func:`_column_selection_breaks` fits a clone
+  of the ``ColumnTransformer`` on ``X`` and transforms a few of the same rows; only where that
+  fails or gives other columns (or the fit fails only for the names) is the frame refused. Selections by name (the same columns at
+  fit and at transform) keep working.
 
 :func:`check_feature_input` raises a short error naming ``X`` and what was expected, but only
 where a step that receives ``X`` as it is given is a scikit-learn estimator that takes 2-d input
@@ -202,7 +211,76 @@ def _sklearn_refuses_repeated_names() -> bool:
     return False
 
 
-def check_feature_input(X: Any, estimator: Any) -> None:
+def _column_transformers(estimator: Any) -> list[tuple[Any, str]]:
+    """The scikit-learn ``ColumnTransformer`` steps given ``X`` as it is, with their names as
+    the errors say them ("ColumnTransformer in FeatureUnion")."""
+    from sklearn.compose import ColumnTransformer
+
+    return [(step, " in ".join([type(step).__name__, *reversed(path)]))
+            for step, path in _steps_given_X(estimator) if isinstance(step, ColumnTransformer)]
+
+
+#: rows of ``X`` transformed again after the fit in :func:`_column_selection_breaks`
+_PROBE_ROWS = 5
+
+
+def _later_repeats_renamed(X: Any) -> Any:
+    """A copy of the frame ``X`` whose repeated column names, after their first column, get
+    a suffix that no column has (the first column of each name keeps it)."""
+    names = [str(c) for c in X.columns]
+    taken = set(names)
+    seen: set = set()
+    new = []
+    for c in X.columns:
+        if c in seen:
+            k = 2
+            while f"{c}__{k}" in taken:
+                k += 1
+            c = f"{c}__{k}"
+            taken.add(c)
+        seen.add(c)
+        new.append(c)
+    return X.set_axis(new, axis=1)
+
+
+def _column_selection_breaks(ct: Any, X: Any, y: Any, frozen: bool) -> bool:
+    """Whether a ``ColumnTransformer`` fails on rows of the DataFrame ``X`` (repeated column
+    names) that it was fitted on, or gives them other columns than its fit did.
+
+    Inside a ``FrozenEstimator`` (``frozen``) it is used as fitted; otherwise a clone is fitted
+    on all of ``X`` (with ``y``), as the wrapper will fit it. A fit that fails says nothing here (the model's own
+    fit reports it), nor does a frame without ``iloc``."""
+    from sklearn.base import clone
+
+    if not hasattr(X, "iloc"):
+        return False
+    head = X.iloc[:_PROBE_ROWS]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        if frozen:
+            if not hasattr(ct, "transformers_"):
+                return False
+            fitted, width = ct, None
+        else:
+            try:
+                fitted = clone(ct)
+                width = np.shape(fitted.fit_transform(X, y))[1]
+            except Exception:  # noqa: BLE001 - the names, or what the model's own fit will say
+                # a selection by a repeated name fails in fit ("not unique in dataframe"): the
+                # names are the cause where the frame with its later repeats renamed fits
+                try:
+                    clone(ct).fit(_later_repeats_renamed(X), y)
+                except Exception:  # noqa: BLE001 - not the names: the model's fit says why
+                    return False
+                return True
+        try:
+            again = fitted.transform(head)
+        except Exception:  # noqa: BLE001 - any refusal of the rows it was fitted on
+            return True
+    return width is not None and np.shape(again)[1] != width
+
+
+def check_feature_input(X: Any, estimator: Any, y: Any = None) -> None:
     """Refuse a 1-d ``X``, or a DataFrame with duplicate column names, where the estimator's
     first step is a scikit-learn estimator that would refuse it.
 
@@ -212,6 +290,9 @@ def check_feature_input(X: Any, estimator: Any) -> None:
         The rows given to a wrapper's ``fit``.
     estimator : estimator
         The wrapper's inner estimator.
+    y : array-like, default=None
+        The labels, for the trial fit of a ``ColumnTransformer`` on a frame with repeated
+        column names (a scikit-learn that accepts such frames; see the module's notes).
 
     Raises
     ------
@@ -228,6 +309,22 @@ def check_feature_input(X: Any, estimator: Any) -> None:
     ...
     ValueError: `X` must be 2-d, shape (n_samples, n_features), for LogisticRegression (scikit-learn refuses 1-d input); got a 1-d ndarray of 4 values. For a single feature pass X.reshape(-1, 1), a one-column DataFrame (series.to_frame()) or [[v] for v in X].
     """
+    repeated = _duplicate_names(X)
+    shown = ", ".join(repr(c) for c in repeated[:5])
+    more = f" and {len(repeated) - 5} more" if len(repeated) > 5 else ""
+    if repeated and not _sklearn_refuses_repeated_names():
+        from sklearn.frozen import FrozenEstimator
+
+        frozen = isinstance(estimator, FrozenEstimator)
+        for ct, ct_name in _column_transformers(estimator):
+            if _column_selection_breaks(ct, X, y, frozen):
+                raise ValueError(
+                    f"`X` must have distinct column names for {ct_name} (this scikit-learn's "
+                    "ColumnTransformer selects a DataFrame's columns by name, so a repeated "
+                    "name brings all its columns and the model fails on them); "
+                    f"got {len(repeated)} name(s) used more than once: {shown}{more}. Rename "
+                    "or drop the repeated columns."
+                )
     refusing = _refusing_step(estimator)
     if refusing is None:
         return
@@ -244,10 +341,7 @@ def check_feature_input(X: Any, estimator: Any) -> None:
             "For a single feature pass X.reshape(-1, 1), a one-column DataFrame "
             "(series.to_frame()) or [[v] for v in X]."
         )
-    repeated = _duplicate_names(X)
     if repeated and _sklearn_refuses_repeated_names():
-        shown = ", ".join(repr(c) for c in repeated[:5])
-        more = f" and {len(repeated) - 5} more" if len(repeated) > 5 else ""
         raise ValueError(
             f"`X` must have distinct column names for {name} (this scikit-learn refuses "
             f"repeated ones); got {len(repeated)} name(s) used more than once: {shown}{more}. "

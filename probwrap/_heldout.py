@@ -942,7 +942,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         check_rows_match(X, n)
         # 1-d X or repeated column names that the model's scikit-learn step refuses: said
         # here, before the folds, not at the end of a cross-fitting message
-        check_feature_input(X, self.estimator)
+        check_feature_input(X, self.estimator, y_arr)
         sw = None
         if sample_weight is not None:
             sw = rescale_extreme_weights(check_sample_weight(sample_weight, n), type(self).__name__)
