@@ -867,6 +867,31 @@ def _python_value(T: Any, spark_type: Any, values: np.ndarray) -> Any:
     return values
 
 
+def _refuse_missing_batch_labels(X: Any, batch_col: str, labels: list) -> None:
+    """A ``ValueError`` when the batch column holds a missing label, as ``monitor`` refuses one
+    in memory (:func:`probwrap.shift._by_batch._refuse_missing_batches`): null, or NaN in a
+    float column (Spark keeps NaN apart from null; before, a NaN label failed on the executors
+    as "Batch None: ... raised KeyError: nan"). ``labels``: the column's distinct values; the
+    rows are counted only when one is missing. A Spark DataFrame's rows have no order, so no
+    row number is named."""
+    from ..metrics._groups import _missing_label
+
+    if not any(_missing_label(v) for v in labels):
+        return
+    F, T = _import_pyspark()
+    col = F.col(batch_col)
+    missing = col.isNull()
+    if isinstance(X.schema[batch_col].dataType, (T.FloatType, T.DoubleType)):
+        missing = missing | F.isnan(col)
+    n = X.filter(missing).count()
+    raise ValueError(
+        f"`batches`: the batch column {batch_col!r} contains {n} missing label(s) (null or NaN; "
+        "a Spark DataFrame's rows have no order, so no row number can be named); give every "
+        f"row its batch (e.g. its date), or leave those rows out "
+        f"(X.dropna(subset=[{batch_col!r}]))."
+    )
+
+
 def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weight: Any):
     """Per-batch prior estimates of an unlabelled Spark DataFrame, one batch per label of a column.
 
@@ -891,8 +916,7 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
     named_cols = [c for c in (batch_col, weight) if c is not None]
     features, named = _feature_columns(owner.estimator_, X, named_cols)
     labels = [r[0] for r in X.select(batch_col).distinct().collect()]
-    if any(v is None for v in labels):
-        raise ValueError(f"The batch column {batch_col!r} has missing values; label every row.")
+    _refuse_missing_batch_labels(X, batch_col, labels)
     labels = sorted(labels)
     rng = check_random_state(est.random_state)
     seeds = {lab: rng.randint(2**31 - 1) for lab in labels}
