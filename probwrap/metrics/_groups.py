@@ -293,8 +293,14 @@ def judged_sizes(w: np.ndarray, y: np.ndarray | None = None) -> tuple[float, ...
     return float(w.sum()), float(np.dot(w, y)), float(np.dot(w, 1.0 - y))
 
 
+def _who(label: Any, overall: bool = False) -> str:
+    """How a note names the rows it is about: ``group 'north'``, or ``all rows`` for the
+    overall row (before, ``group 'all'``, which a group named "all" also gets)."""
+    return "all rows" if overall else f"group {plain(label)!r}"
+
+
 @contextmanager
-def _noted(notes: list[str], label: Any):
+def _noted(notes: list[str], who: str):
     """Warnings raised while checking one group go to the result's ``notes`` (once each, with
     the group named) instead of the caller's console, where one line per group and metric would
     bury them; warnings that are not ``UserWarning`` pass through unchanged."""
@@ -303,36 +309,36 @@ def _noted(notes: list[str], label: Any):
         yield
     for item in caught:
         if issubclass(item.category, UserWarning):
-            msg = f"group {plain(label)!r}: {item.message}"
+            msg = f"{who}: {item.message}"
             if msg not in notes:
                 notes.append(msg)
         else:
             warnings.warn_explicit(item.message, item.category, item.filename, item.lineno)
 
 
-def _safe(notes, label, fn, *args, **kwargs) -> float:
+def _safe(notes, who, fn, *args, **kwargs) -> float:
     try:
-        with _noted(notes, label):
+        with _noted(notes, who):
             return float(fn(*args, **kwargs))
     except ValueError as exc:  # e.g. one class only: the value is NaN, and the note says why
-        notes.append(f"group {plain(label)!r}: {fn.__name__} not computed ({exc})")
+        notes.append(f"{who}: {fn.__name__} not computed ({exc})")
         return float("nan")
 
 
-def _interval(notes, label, metric, y, p, w, n_resamples, level, seed,
+def _interval(notes, who, metric, y, p, w, n_resamples, level, seed,
               cells=None) -> tuple[float, float]:
     if n_resamples == 0 or np.count_nonzero(w) < 2:
         return (float("nan"), float("nan"))
     kw = {} if cells is None else {"groups": cells}
     try:
-        with _noted(notes, label):
+        with _noted(notes, who):
             res = bootstrap_interval(metric, y, p, sample_weight=w, n_resamples=n_resamples,
                                      confidence_level=level, random_state=seed, **kw)
     except ValueError as exc:
-        notes.append(f"group {plain(label)!r}: no interval for {metric.__name__} ({exc})")
+        notes.append(f"{who}: no interval for {metric.__name__} ({exc})")
         return (float("nan"), float("nan"))
     if not res.interval_reliable:  # many resamples failed, for a reason tied to their values
-        notes.append(f"group {plain(label)!r}: no interval for {metric.__name__} (it could not "
+        notes.append(f"{who}: no interval for {metric.__name__} (it could not "
                      f"be computed in {res.n_failed} of {res.n_resamples} resamples, more than "
                      f"{MAX_DROPPED_SHARE:.0%}, so an interval from the rest would be biased)")
         return (float("nan"), float("nan"))
@@ -340,13 +346,15 @@ def _interval(notes, label, metric, y, p, w, n_resamples, level, seed,
 
 
 def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples, level,
-               seed, notes, cells=None, x=None) -> GroupCheck:
+               seed, notes, cells=None, x=None, overall=False) -> GroupCheck:
     """One group's row of the table; ``x``: its forecasts as given log-odds (None: read
-    from ``p``), which the slope, intercept and log loss are computed on."""
+    from ``p``), which the slope, intercept and log loss are computed on; ``overall``: the
+    row of all rows (its notes say "all rows", not the name of a group)."""
+    who = _who(label, overall)
     if not np.any(w > 0):
         # every row of weight 0 (late labels: every outcome still open): nothing to compute,
         # and dividing by the group's weight would only warn about 0 / 0
-        notes.append(f"group {plain(label)!r}: every row has weight 0 (for late labels: every "
+        notes.append(f"{who}: every row has weight 0 (for late labels: every "
                      "outcome still open), so no number can be computed for it; it is listed, "
                      "not judged.")
         nan = float("nan")
@@ -370,16 +378,16 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
 
     def slope_parts():
         try:
-            with _noted(notes, label):
+            with _noted(notes, who):
                 if x is None:
                     r = calibration_slope_intercept(y, p, sample_weight=w, labels=[0.0, 1.0])
                 else:
                     r = slope_intercept_fit_log_odds(y, x, sample_weight=w, labels=[0.0, 1.0])
                     for note in r.notes:  # forecasts that do not vary or separate the classes
-                        notes.append(f"group {plain(label)!r}: {note}")
+                        notes.append(f"{who}: {note}")
             return r.slope, r.intercept
         except ValueError as exc:
-            notes.append(f"group {plain(label)!r}: no calibration slope ({exc})")
+            notes.append(f"{who}: no calibration slope ({exc})")
             return float("nan"), float("nan")
 
     slope, intercept = slope_parts() if both else (float("nan"), float("nan"))
@@ -388,7 +396,7 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
         # shows how the forecasts of one class vary and cannot cover the group's true score
         missing = "positives" if pos.sum() <= 0 else "negatives"
         notes.append(
-            f"group {plain(label)!r}: one class only (no {missing} with weight > 0): no "
+            f"{who}: one class only (no {missing} with weight > 0): no "
             "calibration slope or intercept, and no bootstrap interval for the Brier score or "
             "log loss (resamples within the group never hold the missing class)."
         )
@@ -413,16 +421,16 @@ def _check_one(label, y, p, w, cutoff, matrix, min_rows, min_events, n_resamples
         judged=bool(judged),
         observed_rate=float(pos.sum() / total),
         mean_forecast=float(np.dot(w, p) / total),
-        calibration_error=_safe(notes, label, smooth_calibration_error, y, p, sample_weight=w,
+        calibration_error=_safe(notes, who, smooth_calibration_error, y, p, sample_weight=w,
                                 labels=[0.0, 1.0]),
         calibration_slope=slope,
         calibration_intercept=intercept,
-        brier=_safe(notes, label, brier_score, y, p, sample_weight=w, labels=[0.0, 1.0]),
-        brier_interval=_interval(notes, label, brier_score, y, p, w, n_resamples, level, seed,
+        brier=_safe(notes, who, brier_score, y, p, sample_weight=w, labels=[0.0, 1.0]),
+        brier_interval=_interval(notes, who, brier_score, y, p, w, n_resamples, level, seed,
                                  cells),
-        log_loss=(_safe(notes, label, log_loss, y, p, sample_weight=w, labels=[0.0, 1.0])
+        log_loss=(_safe(notes, who, log_loss, y, p, sample_weight=w, labels=[0.0, 1.0])
                   if x is None else log_loss_of_log_odds(y, x, sample_weight=w)),
-        log_loss_interval=_interval(notes, label, log_loss if x is None else log_loss_of_log_odds,
+        log_loss_interval=_interval(notes, who, log_loss if x is None else log_loss_of_log_odds,
                                     y, p if x is None else x, w, n_resamples, level, seed,
                                     cells),
         cells=units,
@@ -580,7 +588,7 @@ def calibration_by_group(
         checks.append(_check_one(label, y[rows], p[rows], w[rows], *args, computed,
                                  None if cell_codes is None else cell_codes[rows],
                                  None if x is None else x[rows]))
-    overall = _check_one("all", y, p, w, *args, computed, cell_codes, x)
+    overall = _check_one("all", y, p, w, *args, computed, cell_codes, x, overall=True)
     judged = sorted((c for c in checks if c.judged), key=lambda c: -np.nan_to_num(
         c.calibration_error, nan=-1.0))
     small = sorted((c for c in checks if not c.judged), key=lambda c: -c.weight)

@@ -181,14 +181,21 @@ class GroupReliabilityDisplay:
         self.lines_ = {}
         top = False
         if len(self.tables) > len(_GROUP_COLOURS):
-            # more curves than colours: groups i and i + 8 would look alike without a word
+            # more curves than colours: groups i and i + 8 would look alike without a word.
+            # Where to read the others: calibration_by_group checks binary forecasts only, so
+            # for class probabilities the multiclass report's table (before, the warning sent
+            # them to calibration_by_group, which refuses class probabilities)
+            if any(getattr(t, "top_label", False) for t in self.tables.values()):
+                table = ("the by-group table of the multiclass report "
+                         "(probwrap.report.write_report(..., groups=...))")
+            else:
+                table = "probwrap.metrics.calibration_by_group's table"
             warnings.warn(
                 f"GroupReliabilityDisplay: {len(self.tables)} groups drawn with "
                 f"{len(_GROUP_COLOURS)} colours, so the colours repeat (the curves of the first "
                 f"and the {len(_GROUP_COLOURS) + 1}th group look alike) and the legend lists "
                 f"{len(self.tables)} entries. Draw at most {len(_GROUP_COLOURS)} groups (e.g. "
-                "the rows of the largest ones) and read the others in "
-                "probwrap.metrics.calibration_by_group's table.",
+                f"the rows of the largest ones) and read the others in {table}.",
                 UserWarning,
                 stacklevel=3,
             )

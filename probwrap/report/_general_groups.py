@@ -34,7 +34,7 @@ from ..metrics._groups import (
 )
 from ..metrics._inputs import count_scale_weights
 from ._common import NoteLog, withheld_interval
-from ._groups_html import gap_interval_text, resampled_words
+from ._groups_html import gap_interval_text, resampled_words, row_name
 from ._html_parts import _text
 
 __all__ = ["ClassGroupCheck", "ClassGroupChecks", "multiclass_by_group",
@@ -61,6 +61,8 @@ class ClassGroupCheck:
     log_loss_interval: tuple[float, float]
     mean_cost: float = float("nan")
     action_shares: np.ndarray | None = None
+    #: the classes (named as the notes name them) with rows elsewhere but none of weight > 0 here
+    absent_classes: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -81,8 +83,9 @@ class ClassGroupChecks:
 
 def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, level, seed,
          min_rows, min_events, classes_present, class_names, log: NoteLog,
-         cells: np.ndarray | None = None) -> ClassGroupCheck:
-    key, about = f"group:{group}", f"group {group}"
+         cells: np.ndarray | None = None, overall: bool = False) -> ClassGroupCheck:
+    # the overall row's notes say "all rows" (before, "group all", as a group named "all" does)
+    key, about = ("overall", "all rows") if overall else (f"group:{group}", f"group {group}")
     # sizes as calibration_by_group judges them: weights on the row-count scale, summed
     eff_class = [float(w[y == j].sum()) for j in classes_present]
     rarest = float(min(eff_class)) if eff_class else 0.0
@@ -98,9 +101,9 @@ def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, l
         return nan if out is None else float(out)
 
     lacking = [int(j) for j in classes_present if not np.any(w[y == j] > 0)]
-    if lacking and group != "all":
-        named = ", ".join(str(class_names[j]) if class_names is not None else str(j)
-                          for j in lacking)
+    absent = tuple(str(class_names[j]) if class_names is not None else str(j) for j in lacking)
+    if lacking and not overall:
+        named = ", ".join(absent)
         log.add(key, about, "no interval",
                 f"no row of class(es) {named} with weight > 0: no bootstrap interval for the "
                 "Brier score or log loss (resamples within the group never hold those classes)")
@@ -137,6 +140,7 @@ def _one(group, y, p, w, k, row_cost, actions, n_actions, n_bins, n_resamples, l
         brier=value(brier_score), brier_interval=interval(brier_score),
         log_loss=value(log_loss), log_loss_interval=interval(log_loss),
         mean_cost=nan if mean_cost is None else mean_cost, action_shares=shares,
+        absent_classes=() if overall else absent,
     )
 
 
@@ -212,11 +216,18 @@ def multiclass_by_group(
             w[rows], k, None if row_cost is None else row_cost[rows],
             None if actions is None else actions[rows], n_actions, *args,
             None if codes is None else codes[rows]))
-    overall = _one("all", y_index, proba, w, k, row_cost, actions, n_actions, *args, codes)
+    overall = _one("all", y_index, proba, w, k, row_cost, actions, n_actions, *args, codes,
+                   overall=True)
     judged = sorted((c for c in checks if c.judged), key=lambda c: -np.nan_to_num(
         c.top_label_error, nan=-1.0))
     small = sorted((c for c in checks if not c.judged), key=lambda c: -c.weight)
-    notes = [f"{c.group}: too small to judge ({c.effective_rows:.0f} rows, "
+    # a group without a class is not judged however large it is: said so, not "too small"
+    # (before: "too small to judge (1748 rows, 0 of its rarest class)")
+    notes = [f"{c.group}: not judged: no row of class(es) {', '.join(c.absent_classes[:5])}"
+             + (", ..." if len(c.absent_classes) > 5 else "")
+             + f" ({c.effective_rows:.0f} rows; a group is judged with {min_events:g} rows of "
+             "every class)" if c.absent_classes else
+             f"{c.group}: too small to judge ({c.effective_rows:.0f} rows, "
              f"{c.rarest_class_rows:.0f} of its rarest class)" for c in small]
     notes += [f"{n.about}: {n.kind}: {n.message}" + (f" ({n.count} times)" if n.count > 1
                                                        else "") for n in log.notes]
@@ -288,15 +299,17 @@ def multiclass_group_section(c: Any) -> str:
                                                for a in checks.action_names)
     rows = []
     for g in [*checks.groups, checks.overall]:
-        judged = "yes" if g.judged else "<b>too small to judge</b>"
-        cells = [f"<td>{_text(str(g.group))}</td>", f"<td>{g.effective_rows:.0f}</td>",
+        judged = ("yes" if g.judged else "<b>not judged: a class missing</b>"
+                  if g.absent_classes else "<b>too small to judge</b>")
+        name = row_name(checks, g)
+        cells = [f"<td>{_text(name)}</td>", f"<td>{g.effective_rows:.0f}</td>",
                  f"<td>{judged}</td>", _cell(g.top_label_error), _cell(g.classwise_error),
                  _cell(g.largest_share_gap), _cell(g.brier), _interval(g.brier_interval, g.judged),
                  _cell(g.log_loss), _interval(g.log_loss_interval, g.judged)]
         if rule:
             cells.append(_cell(g.mean_cost))
             cells += [_cell(float(s)) for s in g.action_shares]
-        rows.append(f'<tr data-group="{_text(str(g.group))}">{"".join(cells)}</tr>')
+        rows.append(f'<tr data-group="{_text(name)}">{"".join(cells)}</tr>')
     gaps = "".join(
         f"<li>{_text(x.metric.replace('_', ' '))}: {x.gap:.4f} (highest "
         f"{_text(str(x.highest))}, lowest {_text(str(x.lowest))}{gap_interval_text(x)})</li>"

@@ -27,6 +27,21 @@ def resampled_words(checks: Any) -> str:
             else "rows resampled")
 
 
+def row_name(checks: Any, g: Any) -> str:
+    """The name a by-group table shows for ``g``: its group, or "all" for the overall row;
+    "all rows (overall)" where a group is itself named "all" (before, two rows of the table
+    read "all", and the overall one could not be told from the group)."""
+    if g is not checks.overall:
+        return str(g.group)
+    names = {str(x.group) for x in checks.groups}
+    name = "all"
+    if name in names:
+        name = "all rows (overall)"
+        while name in names:
+            name += "*"
+    return name
+
+
 def group_section(c: Any) -> str:
     """HTML for ``c.group_checks`` (a :class:`probwrap.metrics.GroupChecks`), or ``""``."""
     checks = getattr(c, "group_checks", None)
@@ -45,7 +60,8 @@ def group_section(c: Any) -> str:
         units = getattr(g, "cells", None)  # counts: the group's cells, the units judged
         size = (f"{g.effective_rows:.0f}" if units is None
                 else f"{g.effective_rows:.0f} ({units[0]} cells)")
-        cells = [f"<td>{_text(str(g.group))}</td>", f"<td>{size}</td>",
+        name = row_name(checks, g)
+        cells = [f"<td>{_text(name)}</td>", f"<td>{size}</td>",
                  f"<td>{judged}</td>", _cell(g.observed_rate), _cell(g.mean_forecast),
                  _cell(g.calibration_error), _cell(g.calibration_slope, 3),
                  _cell(g.calibration_intercept, 3), _cell(g.brier), _interval(g.brier_interval, g.judged),
@@ -53,7 +69,7 @@ def group_section(c: Any) -> str:
         if decision:
             cells += [_cell(g.share_acted_on), _cell(g.false_positive_rate),
                       _cell(g.false_negative_rate), _cell(g.mean_cost)]
-        rows.append(f'<tr data-group="{_text(str(g.group))}">{"".join(cells)}</tr>')
+        rows.append(f'<tr data-group="{_text(name)}">{"".join(cells)}</tr>')
     gaps = "".join(
         f"<li>{_text(x.metric.replace('_', ' '))}: {x.gap:.4f} (highest "
         f"{_text(str(x.highest))}, lowest {_text(str(x.lowest))}{gap_interval_text(x)})</li>"
