@@ -249,11 +249,11 @@ def _column_selection_breaks(ct: Any, X: Any, y: Any, frozen: bool) -> bool:
 
     Inside a ``FrozenEstimator`` (``frozen``) it is used as fitted; otherwise a clone is fitted
     on all of ``X`` (with ``y``), as the wrapper will fit it. A fit that fails says nothing here (the model's own
-    fit reports it), nor does a frame without ``iloc``."""
+    fit reports it), nor does a frame other than pandas'."""
     from sklearn.base import clone
 
-    if not hasattr(X, "iloc"):
-        return False
+    if not (hasattr(X, "iloc") and type(X).__module__.startswith("pandas")):
+        return False  # (a Dask frame is not fitted twice here, nor its rows collected)
     head = X.iloc[:_PROBE_ROWS]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
