@@ -59,6 +59,17 @@ FEW_CLASS_ROWS = 5
 _SHARPENING_CHECK_MAX_ROWS = 100
 _SEPARATED_MISRANKED_SHARE = 0.02
 
+#: ... and a temperature above 1 (softening) warns the same way when the held-out scores
+#: misrank at most this share of those pairs. On (nearly) separated rows the loss of a
+#: temperature falls toward 0 as it sharpens, so where it stops is set by the fit's prior
+#: (``TemperatureMap``: a gamma prior at the scale giving the scores a root-mean-square of one),
+#: not by errors the rows show; a model with very wide log-odds (naive Bayes, boosting) then
+#: keeps a temperature above 1 that still leaves most rows far more confident than the rows can
+#: check. DAAG's nsw74psidA, 30 cross-fitted rows (session 30): naive Bayes (T = 5.6-7.9) and
+#: boosting (T = 3.3) kept by ``auto`` on held-out scores misranking 0-3.8 % of the pairs, test
+#: log loss 1.28-1.43x scikit-learn's sigmoid, quiet (docs/evidence/small_data_log.md).
+_SOFTENED_MISRANKED_SHARE = 0.05
+
 #: One-vs-rest log-odds come from one logsumexp over all classes up to this many classes: the
 #: sums over the k - 1 other classes are then plain left-to-right sums whichever way NumPy runs
 #: the reduction, as in one call per class; from 8 terms on NumPy may sum them pairwise in one
@@ -500,7 +511,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         (``class_row_counts``: a count table's cases, a score tally's original rows) sharpens the
         scores (a temperature below 1, a Platt slope above 1) while those scores misrank at
         most ``_SEPARATED_MISRANKED_SHARE`` of the weighted pairs of one row of each class
-        (ties count half). A cap on such sharpening was tried in session 29 and reverted: it
+        (ties count half), or keeps a temperature above 1 on scores misranking at most
+        ``_SOFTENED_MISRANKED_SHARE`` of them. A cap on such sharpening was tried in session 29 and reverted: it
         also removed right sharpenings on sets that really are separable, which the same few
         rows cannot tell from a lucky draw (docs/evidence/small_data_log.md)."""
         if scores.ndim != 1:
@@ -508,10 +520,16 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         m = self.calibrator_
         temperature = getattr(m, "temperature_", None)
         slope = getattr(m, "slope_", None)
+        limit = _SEPARATED_MISRANKED_SHARE
         if isinstance(m, PlattMap) and slope is not None and slope > 1.0:
-            how = f"a Platt slope of {slope:.3g}"
+            how = f"the map sharpens the scores (a Platt slope of {slope:.3g})"
         elif temperature is not None and temperature < 1.0:
-            how = f"a temperature of {temperature:.3g}"
+            how = f"the map sharpens the scores (a temperature of {temperature:.3g})"
+        elif temperature is not None and temperature > 1.0:
+            # softening wide log-odds: how far is set by the fit's prior, not by the rows
+            limit = _SOFTENED_MISRANKED_SHARE
+            how = (f"the map's confidence rests on its prior, not on the rows (a temperature "
+                   f"of {temperature:.3g}, softening log-odds wider than the rows can check)")
         else:
             return
         # rows as every row count of the wrapper reads them: a count table's whole-number
@@ -529,11 +547,11 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         wrong = float(np.sum(pair_w * ((sp[:, None] < sn[None, :])
                                        + 0.5 * (sp[:, None] == sn[None, :]))))
         share = wrong / float(pair_w.sum())
-        if share > _SEPARATED_MISRANKED_SHARE:
+        if not share <= limit:
             return
         pairs = int(pos.sum()) * int((~pos).sum())
         warnings.warn(
-            f"CalibrationWrapper({self._method_asked()}): the map sharpens the scores ({how}) "
+            f"CalibrationWrapper({self._method_asked()}): {how}, "
             f"fitted on {n} held-out rows whose scores misrank {100 * share:.2g} % of the "
             f"{pairs} pairs of one row of each class, i.e. (nearly) separate the classes. So "
             "few rows cannot tell a real separation from a draw that separates them by "
