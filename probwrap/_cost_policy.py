@@ -91,7 +91,9 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         ``capacity`` asks otherwise; to tune for accuracy pass ``{"fp": 1, "fn": 1}``.
     strategy : {"bayes", "tuned", "fixed"}, default="bayes"
         ``"bayes"``: the plug-in rule, argmin over actions of ``sum_k p_k C[k, a]`` (binary: act
-        when ``p > (c_fp - c_tn) / ((c_fp - c_tn) + (c_fn - c_tp))``, Elkan 2001).
+        when ``p > (c_fp - c_tn) / ((c_fp - c_tn) + (c_fn - c_tp))``, Elkan 2001; with a
+        ``FrozenEstimator``, a warning says when the rows given to :meth:`fit` show that rule to
+        cost more than one action for every row).
         ``"tuned"``: binary with constant costs, the cutoff on ``p`` with the least cost on the
         out-of-fold predictions of all folds pooled (an exact search over every distinct held-out
         probability), settled toward the plug-in cutoff where the held-out rows do not show it
@@ -505,7 +507,54 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
                 unit = power_of_two_unit(realised)
                 cost = float(np.dot(w / w.sum(), realised / unit)) * unit
             self.heldout_cost_ = cost
+            if (self._cutoff_mode and self.strategy == "bayes" and budget_share is None
+                    and self.guarantee is None and is_frozen(self.estimator)
+                    and not ho.from_tally):
+                self._warn_plugin_worse_than_one_action(realised, ho, matrix)
         return self
+
+    def _warn_plugin_worse_than_one_action(self, realised, ho, matrix) -> None:
+        """Frozen model, plug-in rule: say so when, on the rows given to ``fit`` (all held out
+        from the model), the plug-in decisions cost more than taking one action for every row,
+        by more than two standard errors of the paired row differences (rows counted as
+        :func:`~probwrap.calibration._base.count_weights` counts them, so scaling weights that
+        are not counts cannot change it). Those rows were in hand and showed the model's own
+        probabilities to be unfit for the costs: ``benchmarks/hunt30_sweep.py``, Stat2Data's
+        BlueJays, a gradient boosting frozen on 36 birds, plug-in cost 0.85-1.15 a row on the
+        test rows where flagging every bird cost about 0.5 and scikit-learn's sigmoid 0.44-0.49,
+        with no warning."""
+        from .calibration._base import count_weights
+
+        w = np.asarray(ho.sample_weight, dtype=float)
+        keep = w > 0
+        cw, _ = count_weights(w[keep])
+        n = float(cw.sum())
+        if n <= 1.0:
+            return
+        y = np.asarray(ho.y_index)[keep].astype(np.intp)
+        # costs divided by a power of two (exact), so that sums of huge costs cannot overflow;
+        # the comparison does not depend on the scale, the numbers shown are scaled back
+        unit = power_of_two_unit(matrix)
+        one_action = [matrix[y, a] / unit for a in range(2)]
+        best = int(np.argmin([float(cw @ c) for c in one_action]))
+        own = np.asarray(realised, dtype=float)[keep] / unit
+        d = own - one_action[best]
+        mean = float(cw @ d) / n
+        se = math.sqrt(max(float(cw @ (d - mean) ** 2) / (n - 1.0), 0.0) / n)
+        if not (mean > 0.0 and mean > 2.0 * se):
+            return
+        warnings.warn(
+            f"{type(self).__name__}: on the {int(keep.sum())} rows given to fit (all held out "
+            f"from the frozen model), the plug-in rule (cutoff {self.cutoff_:.4g} on the "
+            f"model's own probabilities) costs {float(cw @ own) / n * unit:.4g} a row, more than "
+            f"taking action {plain(self.actions_[best])!r} for every row "
+            f"({float(cw @ one_action[best]) / n * unit:.4g}; difference {mean * unit:.3g} +- "
+            f"{se * unit:.3g}): the "
+            "model's probabilities do not fit these rows. Use strategy='tuned', or wrap a "
+            "CalibrationWrapper: CostPolicyWrapper(CalibrationWrapper(model), ...).",
+            UserWarning,
+            stacklevel=3,
+        )
 
     def _fit_rule_dask(self, X: Any, y: Any, sample_weight: Any) -> CostPolicyWrapper:
         """Dask rows with a frozen estimator, for multiclass models or costs given as a function
