@@ -62,6 +62,12 @@ __all__ = [
 ]
 
 SCALES = ("proba", "log-odds")
+#: the maps ``calibrate fit --method`` offers besides auto: the names a saved map file records
+#: (``probwrap.calibration._serialize.MAP_NAMES``, in its order; a test checks they agree),
+#: written out here because importing the calibration package loads scikit-learn and SciPy,
+#: which every command, ``probwrap --help`` too, would then wait for
+METHODS = ("temperature", "platt", "beta", "binning", "isotonic", "venn_abers",
+           "vector_scaling", "matrix_scaling", "identity")
 #: rows predicted per step in ``apply`` (a progress bar counts the steps on a terminal)
 _CHUNK = 200_000
 
@@ -469,8 +475,6 @@ def _apply(args: argparse.Namespace) -> int:
 
 def register(subparsers: Any) -> None:
     """Add ``calibrate fit`` and ``calibrate apply``."""
-    from probwrap.calibration._serialize import MAP_NAMES
-
     from ._common import TABLE_SUFFIXES
 
     parser = subparsers.add_parser(
@@ -496,7 +500,7 @@ def register(subparsers: Any) -> None:
     add_positive_label_flag(fit)
     add_scale_flag(fit)
     fit.add_argument(
-        "--method", choices=("auto", *MAP_NAMES), default="auto",
+        "--method", choices=("auto", *METHODS), default="auto",
         help="calibration map; auto (default) keeps the simplest map whose cross-validated log "
         "loss is within one standard error of the best",
     )

@@ -16,7 +16,6 @@ from typing import Any
 import numpy as np
 
 from .._validation import cutoff_text, cutoff_texts, power_of_two_unit
-from .._weights import whole_counts
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
@@ -125,6 +124,8 @@ def cutoff_summary(
     """
     from probwrap.decision import binary_cost_matrix, cutoff_interval, plugin_cutoff, search_cutoff
     from probwrap.decision._cutoff_interval import exact_cutoff_range
+
+    from .._weights import whole_counts
 
     matrix = binary_cost_matrix(costs)
     bounds = (0.0, 1.0) if scale == "proba" else None

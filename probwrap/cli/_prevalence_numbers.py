@@ -12,8 +12,6 @@ from typing import Any
 
 import numpy as np
 
-from probwrap.shift._by_batch import HELD_MOVE
-
 from ._progress import progress
 
 __all__ = ["prevalence_from_source", "prevalence_from_reference", "batch_alarm_json",
@@ -562,6 +560,8 @@ def held_toward_source(result: dict[str, Any]) -> bool:
     >>> held_toward_source({"prevalence": 0.62, "interval": [0.5, 0.7]})
     False
     """
+    from probwrap.shift._by_batch import HELD_MOVE  # here: importing shift loads SciPy
+
     ml = result.get("ml_prevalence")
     return bool(ml is not None and result.get("pseudo_rows", 0.0) > 0
                 and abs(result["prevalence"] - ml) >= HELD_MOVE)
