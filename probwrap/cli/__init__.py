@@ -56,7 +56,75 @@ def build_parser() -> argparse.ArgumentParser:
                 continue  # verb not available in this version
             raise
         module.register(sub)
+    for each in _parsers(parser):
+        # an option is named in full: argparse would otherwise take any unambiguous prefix
+        # (``--cost`` for ``--cost-matrix`` in one verb, an error in another, and a prefix
+        # that stops being unambiguous when a verb gains an option); a prefix is refused with
+        # the options it could mean (:func:`_option_hints`)
+        each.allow_abbrev = False
+        for action in each._actions:
+            _match_choices(action)
     return parser
+
+
+def _parsers(parser: argparse.ArgumentParser) -> list[argparse.ArgumentParser]:
+    """``parser`` and every sub-parser below it, each once."""
+    found: dict[int, argparse.ArgumentParser] = {}
+    todo = [parser]
+    while todo:
+        current = todo.pop()
+        if id(current) in found:
+            continue
+        found[id(current)] = current
+        for action in current._actions:
+            if isinstance(action, argparse._SubParsersAction):
+                todo.extend(action.choices.values())
+    return list(found.values())
+
+
+def _choice_key(text: str) -> str:
+    """What two spellings of a choice share: case and '-' / '_' do not matter."""
+    return text.strip().casefold().replace("_", "-")
+
+
+def choice_matcher(choices: tuple[str, ...] | list[str]):
+    """An argparse ``type`` that turns a choice written in another case, or with '_' for '-'
+    (or the reverse), into the choice as the option lists it (``EM`` -> ``em``,
+    ``Log_Odds`` -> ``log-odds``); any other text is refused naming every allowed value, and the
+    nearest one when there is one.
+
+    Examples
+    --------
+    >>> match = choice_matcher(("em", "bbse", "log-odds"))
+    >>> match("EM"), match("log_odds"), match("bbse")
+    ('em', 'log-odds', 'bbse')
+    >>> match("emm")
+    Traceback (most recent call last):
+    ...
+    argparse.ArgumentTypeError: invalid choice: 'emm' (choose from em, bbse, log-odds; case does not matter); did you mean em?
+    """
+    by_key = {_choice_key(c): c for c in choices}
+
+    def parse(text: str) -> str:
+        found = by_key.get(_choice_key(text))
+        if found is not None:
+            return found
+        close = difflib.get_close_matches(_choice_key(text), list(by_key), n=1, cutoff=0.6)
+        hint = f"; did you mean {by_key[close[0]]}?" if close else ""
+        raise argparse.ArgumentTypeError(
+            f"invalid choice: {clean(text)!r} (choose from {', '.join(choices)}; case does not "
+            f"matter){hint}")
+
+    return parse
+
+
+def _match_choices(action: argparse.Action) -> None:
+    """Give an option whose choices are words :func:`choice_matcher` as its type."""
+    if (isinstance(action, argparse._SubParsersAction) or not action.choices
+            or action.type is not None
+            or not all(isinstance(c, str) for c in action.choices)):
+        return
+    action.type = choice_matcher(tuple(action.choices))
 
 
 class _Terminated(BaseException):
@@ -150,30 +218,70 @@ def _verb_parser(parser: argparse.ArgumentParser, argv: list[str]) -> argparse.A
     return current
 
 
+def _option_hints(names: list[str], token: str) -> str:
+    """What a long option the verb does not have may have meant: every option it begins
+    (abbreviated names are not taken), else the nearest names (a misspelling), else ""."""
+    name = token.split("=", 1)[0]
+    starting = [o for o in names if o.startswith(name)] if len(name) > 2 else []
+    if starting:
+        listed = (", ".join(starting[:-1]) + " or " + starting[-1]) if len(starting) > 1 \
+            else starting[0]
+        return (f"{name} is not an option, and options are not abbreviated: did you mean "
+                f"{listed}?")
+    folded = [o for o in names if o.casefold() == name.casefold()]
+    close = folded or difflib.get_close_matches(name, names, n=2, cutoff=0.75)
+    if close:
+        return f"{name}: did you mean {' or '.join(close)}?"
+    return ""
+
+
 def _unknown_options(parser: argparse.ArgumentParser, argv: list[str],
                      unknown: list[str]) -> None:
     """Refuse arguments no option of the verb takes, with the verb's usage (not the top-level
-    ``probwrap VERB ...``) and the nearest option names for a misspelt flag
-    (``--capacty`` -> ``--capacity``); exits with code 2."""
+    ``probwrap VERB ...``) and, for a long option, the options it may have meant: those it
+    begins (``--cost`` -> ``--cost-fp``, ..., ``--cost-matrix``; abbreviations are not taken)
+    or the nearest names of a misspelling (``--capacty`` -> ``--capacity``); exits with code 2."""
     verb = _verb_parser(parser, argv)
     names = [o for a in verb._actions for o in a.option_strings if o.startswith("--")]
-    hints = []
-    for token in unknown:
-        if not token.startswith("--"):
-            continue
-        close = difflib.get_close_matches(token.split("=", 1)[0], names, n=2, cutoff=0.75)
-        if close:
-            hints.append(f"{token.split('=', 1)[0]}: did you mean "
-                         f"{' or '.join(close)}?")
+    hints = [h for h in (_option_hints(names, t) for t in unknown if t.startswith("--")) if h]
     message = "unrecognized arguments: " + " ".join(unknown)
     if hints:
         message += " (" + "; ".join(hints) + ")"
     verb.error(message + f"; '{verb.prog} --help' lists the options")
 
 
+def _check_option_names(parser: argparse.ArgumentParser, argv: list[str]) -> None:
+    """Refuse a long option the verb does not have before parsing (through
+    :func:`_unknown_options`): parsing first would stop at a required option the misspelt one
+    was meant to be ("the following arguments are required: --cost-fp" for ``--cost-f 5``),
+    without the hint. The values after it (up to the next option) are named with it."""
+    current = parser
+    unknown: list[str] = []
+    taking = False  # the tokens after an unknown option, up to the next option
+    for token in argv:
+        if token == "--":
+            break
+        subs = [a for a in current._actions if isinstance(a, argparse._SubParsersAction)]
+        if subs and token in subs[0].choices:
+            current, taking = subs[0].choices[token], False
+            continue
+        if token.startswith("--") and " " not in token:  # argparse reads "--a b" as a value
+            names = {o for a in current._actions for o in a.option_strings}
+            taking = token.split("=", 1)[0] not in names
+            if taking:
+                unknown.append(token)
+        elif token.startswith("-") and not _NEGATIVE_VALUE.match(token):
+            taking = False
+        elif taking:
+            unknown.append(token)
+    if unknown:
+        _unknown_options(parser, argv, unknown)
+
+
 def _run(argv: list[str] | None) -> int:
     parser = build_parser()
     argv = join_negative_values([str(a) for a in (sys.argv[1:] if argv is None else argv)])
+    _check_option_names(parser, argv)
     args, unknown = parser.parse_known_args(argv)
     if unknown:
         _unknown_options(parser, argv, unknown)
