@@ -139,7 +139,7 @@ def test_one_stray_value_above_one_is_not_called_percentages(cancer, tmp_path, c
     frame = cancer.assign(lr=cancer["lr"] * 100)
     frame.to_csv(path, index=False)
     code, _, err = _cutoff(capsys, path, "--label-column", "y")
-    assert code == 1 and "look like percentages: divide them by 100" in err
+    assert code == 1 and "look like percentages: give --scale percent" in err
 
 
 def test_one_label_only_says_so(cancer, tmp_path, capsys):

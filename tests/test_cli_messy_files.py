@@ -114,7 +114,7 @@ def test_percentages_are_named_as_percentages(scored, capsys):
     frame.assign(score=frame["score"] * 100).to_csv(path, index=False)
     code, _, err = _cutoff(capsys, path)
     assert code == 1
-    assert "look like percentages: divide them by 100" in err
+    assert "look like percentages: give --scale percent, which divides every score by 100" in err
     assert "column 'score', row" in err
     # log-odds (negative values) keep the log-odds hint, without the percentage one
     path = root / "logodds.csv"

@@ -271,15 +271,15 @@ def test_parquet_with_number_column_names_is_read(cancer, tmp_path, capsys):
 
 
 def test_percentages_given_as_log_odds_draw_a_warning(cancer, tmp_path, capsys):
-    """Scores in percent (0-100) draw "look like percentages: divide them by 100; for log-odds
-    scores use --scale log-odds"; with --scale log-odds they were read without a word as
+    """Scores in percent (0-100) draw "look like percentages: give --scale percent, ...; for
+    log-odds scores use --scale log-odds"; with --scale log-odds they were read without a word as
     probabilities of 0.5 to 1 for every row."""
     path = tmp_path / "percent.csv"
     cancer.assign(score=(100 * cancer["score"]).round(3)).to_csv(path, index=False)
     code, _, err = _cutoff(capsys, path, "--scale", "log-odds")
     assert code == 0
     assert "lies in [0, 100]" in err and "none negative, as percentages do" in err
-    assert "divide it by 100 and use --scale proba" in err
+    assert "if the column holds percentages, use --scale percent" in err
     # real log-odds (negative ones among them) draw nothing
     score = cancer["score"].clip(1e-6, 1 - 1e-6)
     cancer.assign(score=np.log(score / (1 - score))).to_csv(path, index=False)

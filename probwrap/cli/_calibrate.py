@@ -32,6 +32,7 @@ from ._common import (
     clean,
     is_standard_stream,
     require,
+    row_number,
     rows_text,
     shown,
     warn_line,
@@ -62,6 +63,9 @@ __all__ = [
 ]
 
 SCALES = ("proba", "log-odds")
+#: what ``--scale`` takes: the scales of :data:`SCALES` and ``percent``, probabilities written
+#: from 0 to 100, which are divided by 100 when read (a map takes them as ``proba``)
+SCORE_SCALES = ("proba", "percent", "log-odds")
 #: the maps ``calibrate fit --method`` offers besides auto: the names a saved map file records
 #: (``probwrap.calibration._serialize.MAP_NAMES``, in its order; a test checks they agree),
 #: written out here because importing the calibration package loads scikit-learn and SciPy,
@@ -78,12 +82,26 @@ def add_scale_flag(parser: argparse.ArgumentParser, *, default: str | None = "pr
     """The ``--scale`` flag: what the score column holds."""
     parser.add_argument(
         "--scale",
-        choices=SCALES,
+        choices=SCORE_SCALES,
         default=default,
         help="what the score column holds: probabilities of the positive class in [0, 1] "
-        + ("(default) " if default == "proba" else "")
-        + "or log-odds (any real number, e.g. a decision_function value)" + help_extra,
+        + ("(proba, the default), " if default == "proba" else "(proba), ")
+        + "the same written as percentages from 0 to 100 (percent: each score is divided by "
+        "100 when read) or log-odds (any real number, e.g. a decision_function value)"
+        + help_extra,
     )
+
+
+def probability_scale(scale: str | None) -> str | None:
+    """The scale a map or a computation takes for scores read with ``--scale scale``:
+    percentages are read as probabilities (divided by 100), the others as they are.
+
+    Examples
+    --------
+    >>> probability_scale("percent"), probability_scale("log-odds")
+    ('proba', 'log-odds')
+    """
+    return "proba" if scale == "percent" else scale
 
 
 def read_scores(frame: Any, column: str, path: str | Path, *, scale: str,
@@ -101,6 +119,9 @@ def read_scores(frame: Any, column: str, path: str | Path, *, scale: str,
     """
     if scale == "proba":
         return probability_column(frame, column, path, flag=flag, allow_missing=allow_missing)
+    if scale == "percent":
+        return _percent_column(frame, column, path, flag=flag, verb=verb,
+                               allow_missing=allow_missing)
     values = numeric_column(frame, column, path, flag=flag, allow_missing=allow_missing,
                             infinite_hint=(
         "; an infinite log-odds comes from a probability of exactly 0 or 1 (a forest's vote "
@@ -124,8 +145,36 @@ def read_scores(frame: Any, column: str, path: str | Path, *, scale: str,
             f"{path}: every value of column {plain(column)!r} lies in [0, 100] ({lo:.3g} to "
             f"{hi:.3g}), none negative, as percentages do, but the scale is log-odds, which "
             f"reads every row as a probability of at least {1 / (1 + np.exp(-lo)):.3g}; if "
-            "the column holds percentages, divide it by 100 and use --scale proba"))
+            "the column holds percentages, use --scale percent"))
     return values
+
+
+def _percent_column(frame: Any, column: str, path: str | Path, *, flag: str,
+                    verb: str | None, allow_missing: bool) -> np.ndarray:
+    """``--scale percent``: the column's numbers in [0, 100] divided by 100 (a new array; the
+    table is not changed), or a DataError naming the first row outside; every value in [0, 1]
+    (at least 10 rows, not all equal) draws a warning that they look like probabilities."""
+    values = numeric_column(frame, column, path, flag=flag, allow_missing=allow_missing)
+    with np.errstate(invalid="ignore"):
+        bad = (values < 0.0) | (values > 100.0)
+    if bad.any():
+        row = int(np.flatnonzero(bad)[0])
+        hint = ("; for log-odds scores use --scale log-odds" if np.nanmin(values) < 0.0
+                else "")
+        raise DataError(
+            f"{path}: column {shown(column)}, {row_number(path, row)}: {shown(values[row])} is not a percentage in [0, 100] (--scale percent reads "
+            f"every score as a percentage; {int(bad.sum())} of {int(np.isfinite(values).sum())} "
+            f"values lie outside){hint}")
+    given = values[~np.isnan(values)]
+    if (verb is not None and given.shape[0] >= 10 and given.max() <= 1.0
+            and given.max() > given.min()):
+        warn_line(verb, (
+            f"{path}: every value of column {plain(column)!r} lies in [0, 1] "
+            f"({float(given.min()):.3g} to {float(given.max()):.3g}), as probabilities do, but "
+            "--scale percent divides them by 100, reading them as probabilities of at most "
+            f"{float(given.max()) / 100:.3g}; if the column holds probabilities, use --scale "
+            "proba"))
+    return values / 100.0
 
 
 def report_warnings(verb: str, caught: list) -> None:
@@ -142,7 +191,7 @@ def to_log_odds(scores: np.ndarray, scale: str) -> np.ndarray:
     """Scores on the log-odds scale that the maps take (probabilities via proba_to_log_odds)."""
     from probwrap.calibration import proba_to_log_odds
 
-    return proba_to_log_odds(scores) if scale == "proba" else scores
+    return proba_to_log_odds(scores) if probability_scale(scale) == "proba" else scores
 
 
 def fit_map(
@@ -258,7 +307,7 @@ def _fit(args: argparse.Namespace) -> int:
             raise DataError(f"{args.scores}: the map cannot be fitted ({exc})") from None
         report_warnings("calibrate", caught)
         metadata: dict[str, Any] = {
-            "score_scale": args.scale,
+            "score_scale": probability_scale(args.scale),
             "labels": labels,
             "n_rows": int(scores.shape[0]),
             "n_positive": int(counts[1]),
@@ -381,19 +430,22 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
             f"{path}: the map file does not record the scale of its scores (field "
             "'score_scale'); say it with --scale proba or --scale log-odds"
         )
-    if stored in SCALES and scale is not None and stored != scale:
+    wanted = probability_scale(scale)  # percentages are read as probabilities
+    if stored in SCALES and wanted is not None and stored != wanted:
         raise DataError(
             f"{path}: the map was fitted on {stored} scores but --scale says {scale}"
         )
     try:
-        used = map_score_scale(description, score_scale=scale)
-        cal_map = map_from_dict(description, score_scale=scale)
+        used = map_score_scale(description, score_scale=wanted)
+        cal_map = map_from_dict(description, score_scale=wanted)
     except (ValueError, TypeError, KeyError) as exc:
         raise DataError(f"{path}: not a usable probwrap map: {clean(str(exc))}") from None
     except RecursionError:
         raise DataError(f"{path}: not a probwrap map (nested too deeply)") from None
     if cal_map.n_score_columns_ != 1:
         raise DataError(f"{path}: the map is multiclass; score files here hold one binary score")
+    if scale == "percent":  # the file's scores are read as percentages, then divided
+        used = "percent"
     return cal_map, dict(description), used
 
 

@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 
 from .._validation import cutoff_text, cutoff_texts, power_of_two_unit
-from ._calibrate import add_scale_flag, read_scores, report_warnings
+from ._calibrate import add_scale_flag, probability_scale, read_scores, report_warnings
 from ._common import (
     DataError,
     add_format_flag,
@@ -439,7 +439,8 @@ def _run(args: argparse.Namespace) -> int:
             warnings.simplefilter("always")
             try:
                 out = cutoff_summary(
-                    scores, y, costs, scale=args.scale, capacity=args.capacity,
+                    scores, y, costs, scale=probability_scale(args.scale),
+                    capacity=args.capacity,
                     n_resamples=args.resamples, confidence_level=args.confidence,
                     seed=args.seed, guarantee=guarantee,
                     sample_weight=weights,
@@ -448,6 +449,8 @@ def _run(args: argparse.Namespace) -> int:
                 raise DataError(f"{args.scores}: {exc}") from None
     report_warnings("cutoff", caught)
     out["labels"] = {"negative": labels[0], "positive": labels[1]}
+    if args.scale == "percent":  # the cutoffs are probabilities; the file's column percent
+        out["score_column_divided_by"] = 100
     if late is not None:
         out["late_labels"] = late_label_summary(late)
     if given is not None:
@@ -456,6 +459,10 @@ def _run(args: argparse.Namespace) -> int:
         print(json.dumps(out, indent=2, allow_nan=False))
     else:
         print(_text(out, args.scores))
+        if args.scale == "percent":
+            print(f"  (--scale percent: the scores were divided by 100, so the cutoffs are "
+                  f"probabilities; in the file's percentages, act when the score is above "
+                  f"{100 * out['cutoff']:.6g})")
         if late is not None:
             print("  " + late_label_line(late))
         if given is not None:

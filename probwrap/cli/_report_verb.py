@@ -83,8 +83,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--scores", required=True, metavar="FILE",
                         help="labelled score file (CSV or Parquet)")
     parser.add_argument("--score-column", metavar="C",
-                        help="column of positive-class scores: probabilities in [0, 1], or "
-                        "log-odds with --scale log-odds")
+                        help="column of positive-class scores: probabilities in [0, 1], "
+                        "percentages with --scale percent, or log-odds with --scale log-odds")
     parser.add_argument("--class-columns", metavar="C1,C2,...",
                         help="instead of --score-column: one probability column per class, "
                         "comma-separated; labels are these column names or indices 0..k-1")
@@ -270,7 +270,8 @@ def _class_handler(args: argparse.Namespace, parser: argparse.ArgumentParser) ->
         parser.error("--positive-label is for binary score files (--score-column); with "
                      "--class-columns the labels name the classes")
     if args.scale != "proba":
-        parser.error("--class-columns take probabilities; --scale log-odds is for binary files")
+        parser.error(f"--class-columns take probabilities in [0, 1]; --scale {args.scale} is "
+                     "for binary files (one --score-column)")
     if args.capacity is not None and not 0 < args.capacity <= 1:
         parser.error(f"--capacity must be a share in (0, 1]; got {args.capacity:g}"
                      f"{percent_hint(args.capacity)}")
@@ -474,7 +475,8 @@ def _made_from(args: argparse.Namespace) -> str:
         read.append(f"class columns {', '.join(col(c) for c in _split(args.class_columns))}")
     elif args.score_column is not None:
         read.append(f"scores {col(args.score_column)}"
-                    + (" (log-odds)" if getattr(args, "scale", "proba") == "log-odds" else ""))
+                    + {"log-odds": " (log-odds)", "percent": " (percentages, divided by 100)"}
+                    .get(getattr(args, "scale", "proba"), ""))
     for flag, what in (("label_column", "labels"), ("time_column", "times"),
                        ("event_column", "events"), ("weight_column", "weights"),
                        ("group_column", "groups"), ("cell_column", "cells")):

@@ -1149,7 +1149,8 @@ def _number_hint(value: Any, flag: str = "--score-column") -> str:
                     f"as {_number(text[:-1].strip()) / 100:.15g}, or as "
                     f"{clean(text[:-1].strip())} if the column counts in percent)")
         return (f"; a percent sign is not read: write scores as probabilities in [0, 1] "
-                f"({clean(text)} as {_number(text[:-1].strip()) / 100:.15g}) and other numbers "
+                f"({clean(text)} as {_number(text[:-1].strip()) / 100:.15g}), or as the number "
+                f"alone ({clean(text[:-1].strip())}) with --scale percent, and other numbers "
                 "without it")
     if _COMMA_NUMBER.fullmatch(text):
         return ("; numbers are read without thousands separators and with a decimal point (a "
@@ -1174,8 +1175,9 @@ def probability_column(frame: Any, column: str, path: str | Path, *, flag: str,
                 and n_bad >= max(2, PERCENT_SHARE * n_read)):
             # all in [0, 100] with some above 1: a share written in percent
             hint = (f"the column holds numbers from {shown(np.nanmin(values))} to "
-                    f"{shown(np.nanmax(values))}, which look like percentages: divide them by "
-                    "100; for log-odds scores use --scale log-odds")
+                    f"{shown(np.nanmax(values))}, which look like percentages: give --scale "
+                    "percent, which divides every score by 100, or divide the column by 100 "
+                    "in the file; for log-odds scores use --scale log-odds")
         elif np.nanmin(values) >= 0.0:
             # one stray value above 1 among probabilities is no percentage column (dividing
             # every score by 100 was the advice): name how few they are
@@ -1186,6 +1188,8 @@ def probability_column(frame: Any, column: str, path: str | Path, *, flag: str,
             hint = "use --scale log-odds for log-odds scores"
         if not log_odds:  # --class-columns: probabilities only (--scale log-odds is refused)
             hint = (hint.replace("; for log-odds scores use --scale log-odds", "")
+                    .replace("give --scale percent, which divides every score by 100, or "
+                             "divide the column by 100 in the file", "divide them by 100")
                     .replace("use --scale log-odds for log-odds scores",
                              f"{flag} take probabilities; log-odds are read for one "
                              "binary score column only"))
