@@ -278,9 +278,39 @@ def _check_option_names(parser: argparse.ArgumentParser, argv: list[str]) -> Non
         _unknown_options(parser, argv, unknown)
 
 
+def _verb_names(parser: argparse.ArgumentParser, argv: list[str]) -> list[str]:
+    """``argv`` with each verb written as the parser lists it (``Cutoff`` -> ``cutoff``,
+    ``calibrate FIT`` -> ``calibrate fit``: verbs, like choices, are read whatever their case);
+    when it names no verb where one is needed (``probwrap``, ``probwrap calibrate``), a usage
+    error listing the verbs (exit code 2), unless help or the version is asked for."""
+    out = list(argv)
+    current = parser
+    for i, token in enumerate(out):
+        if token == "--":
+            break
+        subs = [a for a in current._actions if isinstance(a, argparse._SubParsersAction)]
+        if not subs:
+            return out
+        if token.startswith("-"):
+            continue
+        by_key = {name.casefold(): name for name in subs[0].choices}
+        name = by_key.get(token.strip().casefold())
+        if name is None:
+            return out  # argparse names the wrong verb and the choices
+        out[i] = name
+        current = subs[0].choices[name]
+    subs = [a for a in current._actions if isinstance(a, argparse._SubParsersAction)]
+    if subs and not {"-h", "--help", "--version"} & set(out):
+        what = subs[0].metavar or "VERB"
+        current.error(f"give a {what}: one of {', '.join(subs[0].choices)} "
+                      f"('{current.prog} --help' says what each does)")
+    return out
+
+
 def _run(argv: list[str] | None) -> int:
     parser = build_parser()
     argv = join_negative_values([str(a) for a in (sys.argv[1:] if argv is None else argv)])
+    argv = _verb_names(parser, argv)
     _check_option_names(parser, argv)
     args, unknown = parser.parse_known_args(argv)
     if unknown:

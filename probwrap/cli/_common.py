@@ -370,10 +370,16 @@ def not_a_number(text: str) -> argparse.ArgumentTypeError:
     --------
     >>> str(not_a_number("0,04"))
     "'0,04' is not a number (write the decimal mark as a point: 0.04)"
+    >>> str(not_a_number("32%"))
+    "'32%' is not a number (a percent sign is not read: write 32% as 0.32)"
     """
     hint = ""
     if re.fullmatch(r"\s*[-+]?\d*,\d+(?:[eE][-+]?\d+)?\s*", text):
         hint = f" (write the decimal mark as a point: {text.strip().replace(',', '.')})"
+    percent = re.fullmatch(r"\s*([-+]?(?:\d+\.?\d*|\.\d+))\s*%\s*", text)
+    if percent:
+        hint = (f" (a percent sign is not read: write {text.strip()} as "
+                f"{float(percent.group(1)) / 100:.15g})")
     return argparse.ArgumentTypeError(f"{plain(text)!r} is not a number{hint}")
 
 
