@@ -121,3 +121,19 @@ def test_class_columns_refuse_the_percent_scale(files, capsys, tmp_path):
               str(tmp_path / "r.html")])
     assert info.value.code == 2
     assert "--scale percent is for binary files" in capsys.readouterr().err
+
+
+def test_report_on_percentages_gives_the_probability_file_cutoff(files, capsys, tmp_path):
+    args = ["--score-column", "score", "--label-column", "diagnosis", "--positive-label",
+            "benign", "--cost-fp", 1, "--cost-fn", 5, "--resamples", 10]
+    proba, _ = _json(capsys, "report", "--scores", files / "proba.csv", *args,
+                     "--out", tmp_path / "p.html")
+    percent, _ = _json(capsys, "report", "--scores", files / "percent.csv", *args,
+                       "--scale", "percent", "--out", tmp_path / "q.html")
+    assert percent["cutoff"] == pytest.approx(proba["cutoff"], rel=1e-9)
+    assert percent["score_column_divided_by"] == 100 and "score_column_divided_by" not in proba
+    code, out, _ = run_cli(capsys, "report", "--scores", files / "percent.csv", *args,
+                           "--scale", "percent", "--out", tmp_path / "q.html")
+    shown = percent.get("recommended_cutoff", percent["cutoff"])
+    assert code == 0
+    assert f"(cutoffs are probabilities: in the file's percentages {100 * shown:.4g})" in out

@@ -755,6 +755,12 @@ def _handler(args: argparse.Namespace) -> int:
             summary["recommended_cutoff"] = float(rec.cutoff)
             line += (f", recommended cutoff {cutoff_text(rec.cutoff, '.4f')} ({rec.name}; "
                      f"least-cost cutoff {cutoff_text(content.chosen_cutoff, '.4f')} on these rows)")
+    if content.chosen_cutoff is not None and getattr(args, "scale", None) == "percent":
+        # the cutoffs are probabilities; the file's column holds percentages
+        shown_cutoff = summary.get("recommended_cutoff", summary["cutoff"])
+        line += (f" (cutoffs are probabilities: in the file's percentages "
+                 f"{100 * shown_cutoff:.4g})")
+        summary["score_column_divided_by"] = 100
     if content.target_prevalence is not None:
         summary.update(source_prevalence=float(content.source_prevalence),
                        target_prevalence=float(content.target_prevalence),
