@@ -1,7 +1,9 @@
 """First-use trips at the start of a command: a verb typed with capitals (``probwrap Cutoff``;
 choices are read whatever their case, verbs now too), no verb at all (``probwrap``,
 ``probwrap calibrate``: "the following arguments are required: VERB", without the verbs), and a
-share typed with a percent sign (``--source-prevalence 32%``: "'32%' is not a number")."""
+share typed with a percent sign (``--source-prevalence 32%``: "'32%' is not a number"), and a
+column name with a space left unquoted in the shell (``--score-column forest score``:
+"unrecognized arguments: score", statsmodels' ``fair`` set scored by a forest)."""
 
 from __future__ import annotations
 
@@ -61,3 +63,18 @@ def test_a_share_with_a_percent_sign_says_what_to_write(held_out, capsys):
                       "--label-column", "benign", "--cost-fp", 1, "--cost-fn", 5,
                       "--capacity", "12.5 %")
     assert "write 12.5 % as 0.125" in err
+
+
+def test_a_name_with_a_space_left_unquoted_is_shown_quoted(held_out, capsys):
+    err = usage_error(capsys, "cutoff", "--scores", held_out, "--score-column", "forest",
+                      "score", "--label-column", "benign", "--cost-fp", 1, "--cost-fn", 5)
+    assert ("unrecognized arguments: score (if 'forest score' is one value of --score-column, "
+            'put it in quotes: --score-column "forest score")') in err
+    err = usage_error(capsys, "report", "--scores", held_out, "--score-column", "score",
+                      "--label-column", "benign", "--title", "Q3", "parcel", "risk", "--out",
+                      "r.html")
+    assert '--title "Q3 parcel risk"' in err
+    # two whole file names where one is taken: no such hint
+    err = usage_error(capsys, "prevalence", "--unlabelled", held_out, "other.csv",
+                      "--score-column", "score", "--source-prevalence", 0.6)
+    assert "unrecognized arguments: other.csv;" in err and "quotes" not in err

@@ -244,10 +244,36 @@ def _unknown_options(parser: argparse.ArgumentParser, argv: list[str],
     verb = _verb_parser(parser, argv)
     names = [o for a in verb._actions for o in a.option_strings if o.startswith("--")]
     hints = [h for h in (_option_hints(names, t) for t in unknown if t.startswith("--")) if h]
+    hints += _quote_hints(verb, argv, unknown)
     message = "unrecognized arguments: " + " ".join(unknown)
     if hints:
         message += " (" + "; ".join(hints) + ")"
     verb.error(message + f"; '{verb.prog} --help' lists the options")
+
+
+def _quote_hints(verb: argparse.ArgumentParser, argv: list[str],
+                 unknown: list[str]) -> list[str]:
+    """For words left over right after an option's value (``--score-column forest score``: a
+    column name with a space, not quoted in the shell), the option with the words quoted."""
+    takes_one = {o for a in verb._actions if a.nargs is None and a.option_strings
+                 and not isinstance(a, argparse._SubParsersAction)
+                 and a.const is None and not isinstance(a, argparse._StoreConstAction)
+                 for o in a.option_strings}
+    stray = {t for t in unknown if not t.startswith("-")}
+    hints = []
+    for j, token in enumerate(argv[:-2]):
+        if (token not in takes_one or argv[j + 1].startswith("-")
+                or re.search(r"\.(csv|tsv|txt|parquet|pq|json|html?|gz|bz2|xz|zip)$",
+                             argv[j + 1], flags=re.IGNORECASE)):
+            continue  # (a whole file name, then another: two files, not one name split)
+        end = j + 2
+        while end < len(argv) and argv[end] in stray:
+            end += 1
+        if end > j + 2:
+            words = " ".join(argv[j + 1:end])
+            hints.append(f"if {words!r} is one value of {token}, put it in quotes: "
+                         f"{token} \"{words}\"")
+    return hints
 
 
 def _check_option_names(parser: argparse.ArgumentParser, argv: list[str]) -> None:
@@ -280,9 +306,7 @@ def _check_option_names(parser: argparse.ArgumentParser, argv: list[str]) -> Non
 
 def _verb_names(parser: argparse.ArgumentParser, argv: list[str]) -> list[str]:
     """``argv`` with each verb written as the parser lists it (``Cutoff`` -> ``cutoff``,
-    ``calibrate FIT`` -> ``calibrate fit``: verbs, like choices, are read whatever their case);
-    when it names no verb where one is needed (``probwrap``, ``probwrap calibrate``), a usage
-    error listing the verbs (exit code 2), unless help or the version is asked for."""
+    ``calibrate FIT`` -> ``calibrate fit``: verbs, like choices, are read whatever their case)."""
     out = list(argv)
     current = parser
     for i, token in enumerate(out):
@@ -299,12 +323,18 @@ def _verb_names(parser: argparse.ArgumentParser, argv: list[str]) -> list[str]:
             return out  # argparse names the wrong verb and the choices
         out[i] = name
         current = subs[0].choices[name]
+    return out
+
+
+def _need_verb(parser: argparse.ArgumentParser, argv: list[str]) -> None:
+    """A usage error listing the verbs when ``argv`` names none where one is needed
+    (``probwrap``, ``probwrap calibrate``), unless help or the version is asked for."""
+    current = _verb_parser(parser, argv)
     subs = [a for a in current._actions if isinstance(a, argparse._SubParsersAction)]
-    if subs and not {"-h", "--help", "--version"} & set(out):
+    if subs and not {"-h", "--help", "--version"} & set(argv):
         what = subs[0].metavar or "VERB"
         current.error(f"give a {what}: one of {', '.join(subs[0].choices)} "
                       f"('{current.prog} --help' says what each does)")
-    return out
 
 
 def _run(argv: list[str] | None) -> int:
@@ -312,6 +342,7 @@ def _run(argv: list[str] | None) -> int:
     argv = join_negative_values([str(a) for a in (sys.argv[1:] if argv is None else argv)])
     argv = _verb_names(parser, argv)
     _check_option_names(parser, argv)
+    _need_verb(parser, argv)
     args, unknown = parser.parse_known_args(argv)
     if unknown:
         _unknown_options(parser, argv, unknown)
