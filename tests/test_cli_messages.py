@@ -178,7 +178,7 @@ LABELLED = [("calibrate", "fit"), ("cutoff",), ("prevalence",), ("report",)]
 @pytest.mark.parametrize("path", LABELLED)
 def test_labelled_verbs_share_scale_and_positive_label(path):
     text = _subparser(*path).format_help()
-    assert "--scale {proba,log-odds}" in text and "--positive-label VALUE" in text
+    assert "--scale {proba,percent,log-odds}" in text and "--positive-label VALUE" in text
 
 
 @pytest.mark.parametrize("path", [("cutoff",), ("prevalence",), ("report",)])
