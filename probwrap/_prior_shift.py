@@ -1295,6 +1295,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             source = getattr(self, "_source_tally", None)
             target = None
             share = None  # (labelled_row_share: rows in memory, a model refit here)
+            repeat_deff = None  # (the mixture check's design effect of repeated rows)
             multiclass = self.classes_.shape[0] > 2
             if cells is not None:
                 cells = self._dask_cells(X, sample_weight, cells, source)
@@ -1381,8 +1382,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                     # rows repeating one another beyond chance (resampled or copied rows): the
                     # interval and the shift test count them as independent (RepeatedRowsWarning);
                     # rows in memory are grouped by their features as well (since 5 December 2026)
-                    self._warn_repeats(proba, folds, sample_weight,
-                                       row_codes=self._unlabelled_row_codes(X))
+                    # the mixture check counts them by their design effect (session 30)
+                    repeat_deff = self._warn_repeats(proba, folds, sample_weight,
+                                                     row_codes=self._unlabelled_row_codes(X))
                 share = self._labelled_row_share(X, sample_weight)
             poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
                 self.interval == "score" and not multiclass
@@ -1398,7 +1400,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             else:
                 rows = None if target is None else _tally_rows(target)
                 res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
-                                   fold_proba=folds, cells=cells)
+                                   fold_proba=folds, cells=cells,
+                                   repeat_design_effect=repeat_deff)
                 interval = res.interval
             if share is not None:
                 # the per-draw cap reads it (evidence_gate; the report moves alike)
@@ -1454,7 +1457,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             self._repeats_warning(found, by_features, stacklevel + 1)
 
     def _warn_repeats(self, proba: np.ndarray, folds: Any, sample_weight: Any,
-                      stacklevel: int = 3, row_codes: np.ndarray | None = None) -> None:
+                      stacklevel: int = 3, row_codes: np.ndarray | None = None) -> float | None:
         """Warn (:class:`~probwrap.shift.RepeatedRowsWarning`) when the unlabelled rows repeat
         one another far more often than independent draws of the labelled classes do; nothing
         where the labelled rows were not kept as rows.
@@ -1474,8 +1477,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         or 1 gives distinct rows the same posteriors (R's Ecdat Housing, Gaussian naive Bayes:
         12 of 179 distinct unlabelled rows at exactly 0 against 4 of 182 labelled rows, and the
         warning said that 11 rows repeated another; benchmarks/shift_real_hunt24.py). Dask and
-        Spark rows: :meth:`_warn_repeats_where_rows_live`."""
-        from .shift._repeats import repeats_of_rows
+        Spark rows: :meth:`_warn_repeats_where_rows_live`.
+
+        Returns the design effect the mixture check divides the rows' effective number by
+        (:func:`probwrap.shift._repeats.mixture_design_effect`) where it warned, else None
+        (since 5 December 2026, session 30: before, the check counted the repeated rows as
+        independent and flagged prior-shift batches of R's MASS Pima and carData Mroz drawn
+        with replacement 8.8 % and 5 % of the time at its 1 % level)."""
+        from .shift._repeats import mixture_design_effect, repeats_of_rows
 
         reference = self._repeat_reference(by_rows=True)
         if row_codes is None or reference is None or (
@@ -1483,8 +1492,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             reference, row_codes = self._repeat_reference(), None
         found = repeats_of_rows(self.prior_estimator_, reference, proba, folds,
                                 sample_weight, row_codes=row_codes)
-        if found is not None:
-            self._repeats_warning(found, row_codes is not None, stacklevel + 1)
+        if found is None:
+            return None
+        self._repeats_warning(found, row_codes is not None, stacklevel + 1)
+        return mixture_design_effect(found)
 
     @staticmethod
     def _repeats_warning(found: tuple, by_features: bool, stacklevel: int) -> None:

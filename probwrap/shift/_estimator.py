@@ -718,6 +718,7 @@ class PriorEstimator(_Resampling):
         interval: bool = True,
         fold_proba: Any = None,
         cells: Any = None,
+        repeat_design_effect: float | None = None,
     ) -> PriorEstimate:
         """Estimate the class priors of unlabelled rows.
 
@@ -769,6 +770,15 @@ class PriorEstimator(_Resampling):
             the fold-averaged score of rows that are not at hand, more than 20,000 Dask or
             Spark rows) serves the shift test and the score interval the same way, and its
             ``rows`` (every row once per fold model, as bins of a tally) the point estimate.
+        repeat_design_effect : float, default=None
+            The rows' design effect of their exact repeats beyond chance (at least 1; None or
+            1: the rows are independent draws): the mixture check (``mixture_misfit_pvalue``,
+            :class:`ClassMixtureMisfitWarning`) then counts the rows as their effective number
+            over it, since rows drawn again from a pool carry the pool's own deviation in
+            every bin share (:func:`probwrap.shift._repeats.mixture_design_effect`; passed by
+            ``PriorShiftWrapper.adapt`` where it raises
+            :class:`~probwrap.shift.RepeatedRowsWarning`, since 5 December 2026, session 30).
+            Nothing else reads it.
 
         Returns
         -------
@@ -868,7 +878,11 @@ class PriorEstimator(_Resampling):
             _warn_empty_columns(we @ pe, "predicted probability mass", self._names())
             ml = _solve_prior(pe, we, src, point.prior if np.all(point.prior > 0) else src,
                               float(self.tol), int(self.max_iter))[0]
-        misfit = self._mixture_misfit(pe, we, n_eff, cell_t, cell_s, moments)
+        deff = 1.0 if repeat_design_effect is None else float(repeat_design_effect)
+        if not (np.isfinite(deff) and deff >= 1.0):
+            raise ValueError("`repeat_design_effect` must be a finite number of at least 1 (or "
+                             f"None); got {repeat_design_effect!r}.")
+        misfit = self._mixture_misfit(pe, we, n_eff / deff, cell_t, cell_s, moments)
         u_t = _score_rows(p, src)
         if refit is not None:
             # a model refit on the labelled rows: the unlabelled rows' scores averaged over the

@@ -51,6 +51,7 @@ __all__ = [
     "REPEAT_EXCESS",
     "RepeatedRowsWarning",
     "judge_repeats",
+    "mixture_design_effect",
     "key_tallies",
     "ml_shares",
     "repeat_tallies",
@@ -580,6 +581,32 @@ def judge_repeats(estimator, counts: tuple | None, ml: np.ndarray,
     if not _beyond_chance(observed, expected, n, clump):
         return None
     return int(rows), int(groups), observed, expected
+
+
+def mixture_design_effect(found: tuple[int, int, float, float] | None) -> float:
+    """The design effect the mixture check (:func:`probwrap.shift.class_mixture_misfit`)
+    divides the rows' effective number by, for rows that repeat one another beyond chance
+    (``found`` from :func:`repeats_of_rows` or :func:`judge_repeats`; None: 1).
+
+    Rows drawn with replacement, ``n`` of them from a pool of ``N``, carry the pool's deviation
+    from the population in every bin share as well as their own: the covariance of the bin
+    shares is ``(1 + n / N)`` times the multinomial one (Kish 1965, the design effect of
+    cluster sampling, from memory), and ``1 + n / N`` is what the rows' design effect of their
+    exact repeats estimates (module docstring). The part of it that independent draws of these
+    classes give, ``expected - 1`` (their chance coincidences, which the multinomial covariance
+    already holds), is taken off: ``1 + observed - expected``, at least 1.
+
+    Examples
+    --------
+    >>> mixture_design_effect((400, 200, 2.1, 1.05))
+    2.05
+    >>> mixture_design_effect(None)
+    1.0
+    """
+    if found is None:
+        return 1.0
+    observed, expected = float(found[2]), float(found[3])
+    return float(max(1.0 + observed - expected, 1.0))
 
 
 def rows_repeat_message(found: tuple[int, int, float, float], by_features: bool = False) -> str:
