@@ -1894,15 +1894,25 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         source = getattr(self, "_source_tally", None)
         if source is None or source.n_replicates == 0 or est.n_resamples == 0:
             folds = self._fold_proba(X)
+            # each batch's rows repeating one another beyond chance, as adapt judges its rows
+            # (RepeatedRowsWarning; since 5 December 2026): judged first, so that each batch's
+            # mixture check counts its repeats by their design effect as adapt's does (since
+            # session 30); warned after the table, as before
+            repeats = None if cells is None else {}
+            deff = None
+            if cells is None:
+                repeats, deff = self._batch_repeats(proba, batches, batch_size, sample_weight,
+                                                    folds, self._unlabelled_row_codes(X))
             table = prior_by_batch(
                 est, proba, batches, batch_size=batch_size, sample_weight=sample_weight,
-                fold_proba=folds, cells=cells,
+                fold_proba=folds, cells=cells, repeat_design_effect=deff,
             )
-            if cells is None:
-                # each batch's rows repeating one another beyond chance, as adapt judges its
-                # rows (RepeatedRowsWarning; since 5 December 2026)
-                self._warn_batch_repeats(table, proba, batches, batch_size, sample_weight,
-                                         folds, self._unlabelled_row_codes(X))
+            if repeats:
+                from .scale._entry import warn_batch_repeats
+
+                warn_batch_repeats([(b, repeats[b][0]) for b in table["batch"]],
+                                   table.shape[0], stacklevel=3,
+                                   by_features=repeats[table["batch"][0]][1])
         else:
             # Fitted on Dask input: the labelled rows are a tally, so each batch's interval is
             # a Poisson bootstrap over the tally's replicates and the batch's rows.
@@ -1912,41 +1922,46 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         return monitor_feature_checks(self, X, table, batches, batch_size, sample_weight,
                                       cells)
 
-    def _warn_batch_repeats(self, table: np.ndarray, proba: np.ndarray, batches: Any,
-                            batch_size: Any, sample_weight: Any, folds: Any,
-                            row_codes: np.ndarray | None = None) -> None:
-        """``monitor``'s :class:`~probwrap.shift.RepeatedRowsWarning` (rows in memory): once,
-        naming the batches whose rows repeat one another beyond chance, each batch judged by
+    def _batch_repeats(self, proba: np.ndarray, batches: Any, batch_size: Any,
+                       sample_weight: Any, folds: Any, row_codes: np.ndarray | None = None
+                       ) -> tuple[dict, np.ndarray | None]:
+        """``monitor``'s judgement of every batch's repeats (rows in memory): ``({batch:
+        (repeats_of_rows(...), by_features)}, design effect per row)``, each batch judged by
         the rule ``adapt`` applies to its rows (:func:`probwrap.shift._repeats.repeats_of_rows`;
-        Dask workers and Spark executors apply it to their batches alike, by features too).
-        With ``row_codes`` (:func:`_row_identity_codes` of the rows) and the labelled rows'
-        read at ``fit``, rows are identical only where their features agree too, as in
-        ``adapt``. Nothing where the labelled rows were not kept as rows."""
+        Dask workers and Spark executors apply it to their batches alike, by features too),
+        and each row given its batch's :func:`probwrap.shift._repeats.mixture_design_effect`
+        (the batch's mixture check reads it: ``prior_by_batch(repeat_design_effect=...)``; since
+        session 30 of 5 December 2026). With ``row_codes`` (:func:`_row_identity_codes` of the
+        rows) and the labelled rows' read at ``fit``, rows are identical only where their
+        features agree too, as in ``adapt``. ``({}, None)`` where the labelled rows were not
+        kept as rows. ``monitor`` warns (:class:`~probwrap.shift.RepeatedRowsWarning`) once,
+        naming the batches whose rows repeat beyond chance, after the table."""
         counts = self._repeat_reference(by_rows=True)
         if row_codes is None or counts is None or row_codes.shape[0] != proba.shape[0]:
             counts, row_codes = self._repeat_reference(), None
-        if counts is None or table.shape[0] == 0:
-            return
-        from .scale._entry import warn_batch_repeats
-        from .shift._repeats import repeats_of_rows
-
         n = proba.shape[0]
+        if counts is None or n == 0:
+            return {}, None
+        from .shift._repeats import mixture_design_effect, repeats_of_rows
+
         if batch_size is not None:
             labels = np.arange(n) // int(batch_size)
         else:
             labels = np.asarray(batches)
             labels = labels.astype(str) if labels.dtype == object else labels
         w = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
-        found = []
-        for b in table["batch"]:
+        found: dict = {}
+        deff = np.ones(n)
+        for b in np.unique(labels):
             rows = labels == b
-            found.append((b, repeats_of_rows(
+            judged = repeats_of_rows(
                 self.prior_estimator_, counts, proba[rows],
                 None if folds is None else [np.asarray(f)[rows] for f in folds],
                 None if w is None else w[rows],
-                row_codes=None if row_codes is None else row_codes[rows])))
-        warn_batch_repeats(found, table.shape[0], stacklevel=4,
-                           by_features=row_codes is not None)
+                row_codes=None if row_codes is None else row_codes[rows])
+            found[b] = (judged, row_codes is not None)
+            deff[rows] = mixture_design_effect(judged)
+        return found, deff
 
     def _warn_imprecise_batches(self, table: np.ndarray) -> None:
         """``monitor``'s :class:`~probwrap.shift.ImprecisePriorWarning`: once per call, naming

@@ -113,3 +113,54 @@ def test_estimate_divides_the_checks_rows_by_the_design_effect():
     assert held != pytest.approx(plain)
     with pytest.raises(ValueError, match="repeat_design_effect"):
         est.estimate(batch, interval=False, repeat_design_effect=0.5)
+
+
+def _flagged_batches(records, n_batches):
+    import re
+
+    for r in records:
+        if r.category is ClassMixtureMisfitWarning:
+            m = re.match(r"In (\d+) of (\d+) batches", str(r.message))
+            return int(m.group(1)) if m else 1
+    return 0
+
+
+def test_monitor_counts_each_batchs_repeats_as_adapt_does():
+    X, y = _load("Pima")
+    rng = np.random.default_rng(3001)
+    idx = rng.permutation(y.size)
+    tr, lab, rest = np.split(idx, [int(0.4 * y.size), int(0.7 * y.size)])
+    model = HistGradientBoostingClassifier(max_iter=100, random_state=1).fit(X.iloc[tr], y[tr])
+    wrapper = PriorShiftWrapper(sklearn_frozen.FrozenEstimator(model), random_state=1)
+    wrapper.fit(X.iloc[lab], y[lab])
+    i1, i0 = rest[y[rest] == 1], rest[y[rest] == 0]
+    parts, by_adapt = [], 0
+    for _ in range(20):
+        k1 = int(rng.binomial(300, rng.uniform(0.15, 0.85)))
+        b = np.concatenate([rng.choice(i1, k1, replace=k1 > i1.size),
+                            rng.choice(i0, 300 - k1, replace=300 - k1 > i0.size)])
+        parts.append(b)
+        with warnings.catch_warnings(record=True) as rec:
+            warnings.simplefilter("always")
+            wrapper.adapt(X.iloc[b])
+        by_adapt += _flagged_batches(rec, 1)
+    with warnings.catch_warnings(record=True) as rec:
+        warnings.simplefilter("always")
+        wrapper.monitor(X.iloc[np.concatenate(parts)], batch_size=300)
+    assert any(r.category is RepeatedRowsWarning for r in rec)
+    # each batch judged as adapt judges it: the same batches flagged (before session 30,
+    # monitor counted the repeated rows as independent: 8 batches flagged against adapt's 0)
+    assert _flagged_batches(rec, 20) == by_adapt
+    assert by_adapt <= binom.ppf(0.995, 20, MIXTURE_MISFIT_LEVEL) + 1
+
+
+def test_prior_by_batch_refuses_a_design_effect_of_the_wrong_length():
+    from probwrap.shift import prior_by_batch
+
+    rng = np.random.default_rng(2)
+    p1 = rng.uniform(0.05, 0.95, size=400)
+    y = (rng.uniform(size=400) < p1).astype(int)
+    proba = np.column_stack([1 - p1, p1])
+    est = PriorEstimator(n_resamples=0, random_state=0).fit(proba[:200], y[:200])
+    with pytest.raises(ValueError, match="repeat_design_effect"):
+        prior_by_batch(est, proba[200:], batch_size=100, repeat_design_effect=np.ones(5))

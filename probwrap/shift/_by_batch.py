@@ -170,6 +170,7 @@ def prior_by_batch(
     sample_weight: Any = None,
     fold_proba: Any = None,
     cells: Any = None,
+    repeat_design_effect: Any = None,
 ) -> np.ndarray:
     """Estimate the class priors batch by batch (for example week by week).
 
@@ -197,6 +198,12 @@ def prior_by_batch(
         over the cells' design effect), the one-vs-rest scores cluster the same way, and
         ``n_effective`` is that design-effective count. A cell should lie within one batch; a
         cell split over batches counts as one cell in each.
+    repeat_design_effect : array-like of shape (n,), default=None
+        Each batch's design effect of its rows' repeats beyond chance, given on every row of
+        the batch (its first row's value is read; at least 1): the batch's mixture check
+        counts its rows over it (:meth:`PriorEstimator.estimate`; ``PriorShiftWrapper.monitor``
+        passes :func:`probwrap.shift._repeats.mixture_design_effect` of the batches that raise
+        :class:`~probwrap.shift.RepeatedRowsWarning`; since session 30 of 5 December 2026).
 
     Warns
     -----
@@ -260,6 +267,12 @@ def prior_by_batch(
         if labels.dtype == object:
             labels = labels.astype(str)
     codes = check_cells(cells, n)
+    deff = None
+    if repeat_design_effect is not None:
+        deff = np.asarray(repeat_design_effect, dtype=float).ravel()
+        if deff.shape[0] != n:
+            raise ValueError(f"`repeat_design_effect` must have one value per row ({n}); got "
+                             f"{deff.shape[0]}.")
     uniq, first, inverse = np.unique(labels, return_index=True, return_inverse=True)
     order = np.argsort(first, kind="stable")
     if batch_size is None and labels.dtype.kind in "iufmM" and np.any(np.diff(order) < 0):
@@ -301,6 +314,7 @@ def prior_by_batch(
                 p[rows], w[rows], random_state=rng.randint(2**31 - 1),
                 fold_proba=None if fold_proba is None else [np.asarray(f)[rows] for f in fold_proba],
                 cells=None if codes is None else codes[rows],
+                repeat_design_effect=None if deff is None else float(deff[first[b]]),
             )
         for item in caught:
             if issubclass(item.category, PriorIntervalConflictWarning):
