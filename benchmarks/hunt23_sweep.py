@@ -40,29 +40,21 @@ from __future__ import annotations
 import argparse
 import sys
 import time
-import warnings
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 from sklearn.base import clone
-from sklearn.calibration import CalibratedClassifierCV
-from sklearn.frozen import FrozenEstimator
 
 from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
 
 sys.path.insert(0, str(Path(__file__).parent))
+import _hunt_loop as L  # noqa: E402
 import hunt21_sweep as H  # noqa: E402
 
 MAX_ROWS = 1500
 SIZES = (40, 150, 600)
-FROZEN_TRAIN = 0.3  # share of a set's rows that fits the frozen model (at most 300 rows)
-
-
-def _cap(d: pd.DataFrame, seed: int = 0) -> pd.DataFrame:
-    if len(d) <= MAX_ROWS:
-        return d.reset_index(drop=True)
-    return d.sample(MAX_ROWS, random_state=seed).reset_index(drop=True)
+_cap = L.cap_frame  # frames above MAX_ROWS rows: a seeded draw of that many
 
 
 def tasks() -> list[H.Task]:
@@ -129,53 +121,21 @@ def models() -> dict:
 
 def draw(task: H.Task, n_cal: int, mode: str, seed: int):
     """(train index for a frozen model or None, calibration index, test index), stratified
-    where the classes allow it."""
-    rng = np.random.default_rng(seed)
-    y = task.y
-    idx = rng.permutation(task.units)
-    tr = None
-    if mode == "frozen":
-        n_tr = min(300, int(FROZEN_TRAIN * task.units))
-        tr, idx = idx[:n_tr], idx[n_tr:]
-    # stratified: take each class's share of n_cal, at least 2 rows of a class when it has 4
-    cal = []
-    classes, counts = np.unique(y[idx], return_counts=True)
-    want = np.maximum(np.round(counts / counts.sum() * n_cal).astype(int), np.minimum(2, counts // 2))
-    for c, k in zip(classes, want, strict=True):
-        cal.extend(idx[y[idx] == c][:k])
-    cal = np.array(sorted(cal))
-    te = np.setdiff1d(idx, cal)
-    return tr, cal, te
+    where the classes allow it (no ``rare`` setup here)."""
+    return L.draw_cell(task, n_cal, mode, seed, rare=None)
 
 
 def sizes_for(task: H.Task, mode: str) -> list[int]:
-    room = task.units - (min(300, int(FROZEN_TRAIN * task.units)) if mode == "frozen" else 0)
-    return [s for s in SIZES if s <= 0.6 * room] or [min(SIZES[0], int(0.5 * room))]
+    return L.sizes_for(task, mode, SIZES, rare=None)
 
 
-def _sig(model, X, y, w, frozen: bool):
-    _, counts = np.unique(y, return_counts=True)
-    cv = int(min(5, counts.min()))
-    if cv < 2:
-        return None
-    est = (CalibratedClassifierCV(model, method="sigmoid", cv=cv, ensemble=False) if frozen
-           else CalibratedClassifierCV(clone(model), method="sigmoid", cv=cv))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        try:
-            return est.fit(X, y) if w is None else est.fit(X, y, sample_weight=w)
-        except ValueError:
-            return None
+_sig = L.sigmoid_reference  # (model, X, y, w, frozen)
 
 
 def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str, seed: int) -> None:
     tr, cal, te = draw(task, n_cal, mode, seed)
     X, y = task.X, task.y
-    Xc, yc = X.iloc[cal].reset_index(drop=True), y[cal]
-    Xt, yt = X.iloc[te].reset_index(drop=True), y[te]
-    classes = np.unique(yc)
-    keep = np.isin(yt, classes)
-    Xt, yt = Xt[keep].reset_index(drop=True), yt[keep]
+    Xc, yc, Xt, yt, classes = L.split_cell(X, y, cal, te)
     where = f"{task.name}/{mname}/{mode}/n{n_cal}/s{seed}"
     w = None
     if mode == "weights":
@@ -183,17 +143,10 @@ def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str,
         w = w / w.sum()
     row = {"set": task.name, "model": mname, "mode": mode, "n_cal": len(cal), "seed": seed,
            "k": len(classes), "minority": int(np.min(np.unique(yc, return_counts=True)[1]))}
-    cw: list = []
     try:
-        if mode == "frozen":
-            fitted = H._fit(clone(model), X.iloc[tr].reset_index(drop=True), y[tr], None, cw)
-            if len(np.unique(y[tr])) != len(classes):
-                return
-            base = FrozenEstimator(fitted)
-            own = fitted
-        else:
-            base = clone(model)
-            own = H._fit(clone(model), Xc, yc, w, cw)
+        base, own = L.base_and_own(model, X, y, tr, Xc, yc, w, H._fit)
+        if tr is not None and len(np.unique(y[tr])) != len(classes):
+            return
         row["own"] = H.log_loss(yt, own.predict_proba(Xt), classes)
     except Exception as e:  # noqa: BLE001
         rec.flag(where, f"model itself fails: {type(e).__name__}: {e}"[:200])
@@ -229,7 +182,7 @@ def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str,
         pos = yt == classes[1]
 
         def tcost(a):
-            return float(np.mean(np.where(a & ~pos, 1.0, 0.0) + np.where(~a & pos, 4.0, 0.0)))
+            return float(np.mean(L.cost_rows(a, pos)))
 
         caught = []
         pol = CostPolicyWrapper(base if mode == "frozen" else clone(model), costs={"fp": 1.0, "fn": 4.0},
@@ -248,10 +201,7 @@ def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str,
     rec.rows.append(row)
 
 
-def _gm(r: pd.Series) -> float:
-    r = r.replace([np.inf, -np.inf], np.nan).dropna()
-    r = r[r > 0]
-    return float(np.exp(np.log(r).mean())) if len(r) else np.nan
+_gm = L.geo_mean
 
 
 def summarise(df: pd.DataFrame) -> None:
@@ -284,8 +234,7 @@ def summarise(df: pd.DataFrame) -> None:
     for key in ("cal", "psw", "cost"):
         col = f"{key}_warn"
         if col in df:
-            names = sorted({n for s in df[col].dropna() for n in str(s).split(",") if n})
-            print(f"warnings raised by {key}: {', '.join(names) or 'none'}")
+            print(f"warnings raised by {key}: {', '.join(L.warning_names(df[col].dropna())) or 'none'}")
     nosig = df[df["sig"].isna()]
     if len(nosig):  # a class with a single row: scikit-learn's sigmoid cannot cross-validate
         print(f"{len(nosig)} cells without a sigmoid ({', '.join(sorted(set(nosig['set'])))}): "
@@ -310,9 +259,7 @@ def main(argv: list[str]) -> None:
     a = ap.parse_args(argv)
     all_tasks = tasks()
     if a.list:
-        for t in all_tasks:
-            share = pd.Series(t.y).value_counts(normalize=True).min()
-            print(f"{t.name:16s} rows {t.units:5d} features {t.X.shape[1]:3d} rarest {share:.3f}  {t.note}")
+        L.list_tasks(all_tasks)
         return
     ms = models()
     chosen = [t for t in all_tasks if not a.sets or t.name in a.sets.split(",")]
@@ -322,23 +269,10 @@ def main(argv: list[str]) -> None:
         seeds = 1
     rec = H.Rec()
     t0 = time.time()
-    for t in chosen:
-        print(f"{t.name} ({t.units} rows): {t.note}", flush=True)
-        for mode in modes:
-            for n_cal in sizes_for(t, mode):
-                for m in mnames:
-                    for s in range(seeds):
-                        H_before = len(rec.rows)
-                        one_cell(rec, t, m, ms[m], n_cal, mode, s)
-                        if len(rec.rows) > H_before:
-                            rec.rows[-1]["seconds"] = round(time.time() - t0, 1)
-        if a.csv:  # kept set by set
-            pd.DataFrame(rec.rows).to_csv(a.csv, index=False)
-    df = pd.DataFrame(rec.rows)
-    summarise(df)
-    if a.csv:
-        df.to_csv(a.csv, index=False)
-    print(f"\n{len(rec.flags)} flags; {time.time() - t0:.0f} s")
+    L.run_cells(rec, chosen, modes, sizes_for, mnames, range(seeds),
+                lambda t, m, n_cal, mode, s: one_cell(rec, t, m, ms[m], n_cal, mode, s),
+                t0=t0, rare=None, csv=a.csv)
+    L.finish(rec, t0, a.csv, summarise)
 
 
 if __name__ == "__main__":

@@ -45,32 +45,25 @@ from __future__ import annotations
 import argparse
 import sys
 import time
-import warnings
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 from sklearn.base import clone
-from sklearn.calibration import CalibratedClassifierCV
 from sklearn.ensemble import GradientBoostingClassifier
-from sklearn.frozen import FrozenEstimator
 
 from probwrap import CalibrationWrapper, CostPolicyWrapper
 
 sys.path.insert(0, str(Path(__file__).parent))
+import _hunt_loop as L  # noqa: E402
 import hunt21_sweep as H  # noqa: E402
 
 MAX_ROWS = 1500
 SIZES = (40, 100, 300)
 WEIGHT_SIZE = 100  # the cells that also check the weight scale
-FROZEN_TRAIN = 0.3  # share of a set's rows that fits the frozen model (at most 300 rows)
-RARE = 0.05
-
-
-def _cap(d: pd.DataFrame, seed: int = 0) -> pd.DataFrame:
-    if len(d) <= MAX_ROWS:
-        return d.reset_index(drop=True)
-    return d.sample(MAX_ROWS, random_state=seed).reset_index(drop=True)
+FROZEN_TRAIN = L.FROZEN_TRAIN  # share of a set's rows that fits the frozen model (at most 300 rows)
+RARE = L.RARE
+_cap = L.cap_frame  # frames above MAX_ROWS rows: a seeded draw of that many
 
 
 def _fill(d: pd.DataFrame) -> pd.DataFrame:
@@ -163,50 +156,15 @@ def models() -> dict:
     return m
 
 
-def draw(task: H.Task, n_cal: int, mode: str, seed: int):
-    """(train index for a frozen model or None, calibration index, test index), stratified."""
-    rng = np.random.default_rng(seed)
-    y = task.y
-    idx = rng.permutation(task.units)
-    if mode == "rare":  # drop positives until they are RARE of the rows
-        pos, neg = idx[y[idx] == 1], idx[y[idx] == 0]
-        k = max(int(round(RARE / (1 - RARE) * len(neg))), 1)
-        idx = rng.permutation(np.concatenate([neg, pos[:k]]))
-    tr = None
-    if mode == "frozen":
-        n_tr = min(300, int(FROZEN_TRAIN * task.units))
-        tr, idx = idx[:n_tr], idx[n_tr:]
-    cal = []
-    classes, counts = np.unique(y[idx], return_counts=True)
-    want = np.maximum(np.round(counts / counts.sum() * n_cal).astype(int), np.minimum(2, counts // 2))
-    for c, k in zip(classes, want, strict=True):
-        cal.extend(idx[y[idx] == c][:k])
-    cal = np.array(sorted(cal))
-    te = np.setdiff1d(idx, cal)
-    return tr, cal, te
+draw = L.draw_cell  # (task, n_cal, mode, seed) -> (frozen model's rows or None, labelled, test)
 
 
 def sizes_for(task: H.Task, mode: str) -> list[int]:
-    room = task.units - (min(300, int(FROZEN_TRAIN * task.units)) if mode == "frozen" else 0)
-    if mode == "rare":
-        room = int(np.sum(task.y == 0) / (1 - RARE))
-        return [s for s in SIZES[1:] if s <= 0.6 * room]
-    return [s for s in SIZES if s <= 0.6 * room] or [min(SIZES[0], int(0.5 * room))]
+    return L.sizes_for(task, mode, SIZES)
 
 
 def _sig(model, X, y, frozen: bool):
-    _, counts = np.unique(y, return_counts=True)
-    cv = int(min(5, counts.min()))
-    if cv < 2:
-        return None
-    est = (CalibratedClassifierCV(model, method="sigmoid", cv=cv, ensemble=False) if frozen
-           else CalibratedClassifierCV(clone(model), method="sigmoid", cv=cv))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        try:
-            return est.fit(X, y)
-        except ValueError:
-            return None
+    return L.sigmoid_reference(model, X, y, None, frozen)
 
 
 def _model_scale(model, Xc, yc, Xt) -> float:
@@ -257,25 +215,14 @@ def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str,
              weights: bool) -> None:
     tr, cal, te = draw(task, n_cal, mode, seed)
     X, y = task.X, task.y
-    Xc, yc = X.iloc[cal].reset_index(drop=True), y[cal]
-    Xt, yt = X.iloc[te].reset_index(drop=True), y[te]
-    classes = np.unique(yc)
-    keep = np.isin(yt, classes)
-    Xt, yt = Xt[keep].reset_index(drop=True), yt[keep]
+    Xc, yc, Xt, yt, classes = L.split_cell(X, y, cal, te)
     where = f"{task.name}/{mname}/{mode}/n{n_cal}/s{seed}"
     row = {"set": task.name, "model": mname, "mode": mode, "n_cal": len(cal), "seed": seed,
            "k": len(classes), "minority": int(np.min(np.unique(yc, return_counts=True)[1]))}
-    cw: list = []
     try:
-        if mode == "frozen":
-            fitted = H._fit(clone(model), X.iloc[tr].reset_index(drop=True), y[tr], None, cw)
-            if len(np.unique(y[tr])) != len(classes):
-                return
-            base = FrozenEstimator(fitted)
-            own = fitted
-        else:
-            base = clone(model)
-            own = H._fit(clone(model), Xc, yc, None, cw)
+        base, own = L.base_and_own(model, X, y, tr, Xc, yc, None, H._fit)
+        if tr is not None and len(np.unique(y[tr])) != len(classes):
+            return
         row["own"] = H.log_loss(yt, own.predict_proba(Xt), classes)
     except Exception as e:  # noqa: BLE001
         rec.flag(where, f"model itself fails: {type(e).__name__}: {e}"[:200])
@@ -313,7 +260,7 @@ def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str,
         pos = yt == classes[1]
 
         def tcost(a):
-            return float(np.mean(np.where(a & ~pos, 1.0, 0.0) + np.where(~a & pos, 4.0, 0.0)))
+            return float(np.mean(L.cost_rows(a, pos)))
 
         def policy():
             return CostPolicyWrapper(wrapped(), costs={"fp": 1.0, "fn": 4.0}, strategy="tuned", random_state=seed)
@@ -337,10 +284,7 @@ def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str,
     rec.rows.append(row)
 
 
-def _gm(r: pd.Series) -> float:
-    r = r.replace([np.inf, -np.inf], np.nan).dropna()
-    r = r[r > 0]
-    return float(np.exp(np.log(r).mean())) if len(r) else np.nan
+_gm = L.geo_mean
 
 
 def _cell(g: pd.DataFrame, k: str) -> str:
@@ -377,8 +321,7 @@ def summarise(df: pd.DataFrame) -> None:
     for key in ("cal", "cost"):
         col = f"{key}_warn"
         if col in df:
-            names = sorted({n for s in df[col].dropna() for n in str(s).split(",") if n})
-            print(f"warnings raised by {key}: {', '.join(names) or 'none'}")
+            print(f"warnings raised by {key}: {', '.join(L.warning_names(df[col].dropna())) or 'none'}")
     if "cal_method" in df:
         print("maps chosen: " + ", ".join(f"{k} {v}" for k, v in df["cal_method"].value_counts().items()))
     nosig = df[df["sig"].isna()]
@@ -417,9 +360,7 @@ def main(argv: list[str]) -> None:
     assert CalibrationWrapper().method == "auto"  # "default" and method="auto" are one setting
     all_tasks = tasks()
     if a.list:
-        for t in all_tasks:
-            share = pd.Series(t.y).value_counts(normalize=True).min()
-            print(f"{t.name:16s} rows {t.units:5d} features {t.X.shape[1]:3d} rarest {share:.3f}  {t.note}")
+        L.list_tasks(all_tasks)
         return
     ms = models()
     chosen = [t for t in all_tasks if not a.sets or t.name in a.sets.split(",")]
@@ -428,27 +369,15 @@ def main(argv: list[str]) -> None:
         chosen = [t for t in all_tasks if t.name in ("salaries", "pneumon", "synthtr", "cricketer", "gsoep9402")]
     rec = H.Rec()
     t0 = time.time()
-    for t in chosen:
-        print(f"{t.name} ({t.units} rows): {t.note}", flush=True)
-        binary = len(np.unique(t.y)) == 2
-        for mode in modes:
-            if mode == "rare" and (not binary or np.mean(t.y) < 2 * RARE):
-                continue
-            for n_cal in sizes_for(t, mode):
-                for m in mnames:
-                    for s in range(seeds):
-                        before = len(rec.rows)
-                        one_cell(rec, t, m, ms[m], n_cal, mode, s,
-                                 weights=not a.no_weights and n_cal == WEIGHT_SIZE and mode != "rare")
-                        if len(rec.rows) > before:
-                            rec.rows[-1]["seconds"] = round(time.time() - t0, 1)
-        if a.csv:  # kept set by set
-            pd.DataFrame(rec.rows).to_csv(a.csv, index=False)
-    df = pd.DataFrame(rec.rows)
-    summarise(df)
-    if a.csv:
-        df.to_csv(a.csv, index=False)
-    print(f"\n{len(rec.flags)} flags; {time.time() - t0:.0f} s")
+    L.run_cells(rec, chosen, modes, sizes_for, mnames, range(seeds),
+                lambda t, m, n_cal, mode, s, **kw: one_cell(rec, t, m, ms[m], n_cal, mode, s, **kw), t0=t0,
+                variants=lambda t, mode, n_cal: [{"weights": weighed(a.no_weights, n_cal, mode)}], csv=a.csv)
+    L.finish(rec, t0, a.csv, summarise)
+
+
+def weighed(no_weights: bool, n_cal: int, mode: str) -> bool:
+    """Whether a cell also checks the weight scale (``WEIGHT_SIZE`` rows, not ``rare``)."""
+    return not no_weights and n_cal == WEIGHT_SIZE and mode != "rare"
 
 
 if __name__ == "__main__":

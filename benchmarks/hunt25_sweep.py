@@ -37,7 +37,6 @@ also the mean over the seeds and the paired difference from the sigmoid), ``--li
 
 from __future__ import annotations
 
-import argparse
 import sys
 import time
 from pathlib import Path
@@ -48,6 +47,7 @@ import pandas as pd
 from probwrap import CalibrationWrapper
 
 sys.path.insert(0, str(Path(__file__).parent))
+import _hunt_loop as L  # noqa: E402
 import hunt21_sweep as H  # noqa: E402
 import hunt24_sweep as B  # noqa: E402
 
@@ -165,30 +165,18 @@ def redraws(df: pd.DataFrame) -> None:
 
 
 def main(argv: list[str]) -> None:
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--quick", action="store_true")
-    ap.add_argument("--seeds", type=int, default=1)
-    ap.add_argument("--first-seed", type=int, default=0)
-    ap.add_argument("--sets", default="")
-    ap.add_argument("--models", default="lr,rf,nb,gb")
-    ap.add_argument("--modes", default="cross,frozen,rare")
-    ap.add_argument("--sizes", default="", help="only these numbers of labelled rows, e.g. 40,100")
+    ap = L.sweep_arguments(__doc__.split("\n")[0], models="lr,rf,nb,gb")
     ap.add_argument("--no-weights", action="store_true")
-    ap.add_argument("--list", action="store_true")
-    ap.add_argument("--csv", default="")
-    ap.add_argument("--from-csv", default="", help="summarise saved cells (with --csv's columns) without refitting")
     a = ap.parse_args(argv)
     if a.from_csv:
-        df = pd.concat([pd.read_csv(f) for f in a.from_csv.split(",")], ignore_index=True)
+        df = L.from_csv(a.from_csv)
         B.summarise(df)
         redraws(df)
         return
     assert CalibrationWrapper().method == "auto"
     all_tasks = tasks()
     if a.list:
-        for t in all_tasks:
-            share = pd.Series(t.y).value_counts(normalize=True).min()
-            print(f"{t.name:16s} rows {t.units:5d} features {t.X.shape[1]:3d} rarest {share:.3f}  {t.note}")
+        L.list_tasks(all_tasks)
         return
     ms = B.models()
     names = QUICK if a.quick else (a.sets.split(",") if a.sets else [t.name for t in all_tasks])
@@ -196,30 +184,12 @@ def main(argv: list[str]) -> None:
     sizes = {int(s) for s in a.sizes.split(",")} if a.sizes else None
     rec = H.Rec()
     t0 = time.time()
-    for t in chosen:
-        print(f"{t.name} ({t.units} rows): {t.note}", flush=True)
-        binary = len(np.unique(t.y)) == 2
-        for mode in a.modes.split(","):
-            if mode == "rare" and (not binary or np.mean(t.y) < 2 * B.RARE):
-                continue
-            for n_cal in B.sizes_for(t, mode):
-                if sizes and n_cal not in sizes:
-                    continue
-                for m in a.models.split(","):
-                    for s in range(a.first_seed, a.first_seed + a.seeds):
-                        before = len(rec.rows)
-                        B.one_cell(rec, t, m, ms[m], n_cal, mode, s,
-                                   weights=not a.no_weights and n_cal == B.WEIGHT_SIZE and mode != "rare")
-                        if len(rec.rows) > before:
-                            rec.rows[-1]["seconds"] = round(time.time() - t0, 1)
-        if a.csv:
-            pd.DataFrame(rec.rows).to_csv(a.csv, index=False)
-    df = pd.DataFrame(rec.rows)
-    B.summarise(df)
-    redraws(df)
-    if a.csv:
-        df.to_csv(a.csv, index=False)
-    print(f"\n{len(rec.flags)} flags; {time.time() - t0:.0f} s")
+    L.run_cells(rec, chosen, a.modes.split(","), B.sizes_for, a.models.split(","),
+                range(a.first_seed, a.first_seed + a.seeds),
+                lambda t, m, n_cal, mode, s, **kw: B.one_cell(rec, t, m, ms[m], n_cal, mode, s, **kw), t0=t0,
+                keep_size=lambda n: not sizes or n in sizes,
+                variants=lambda t, mode, n_cal: [{"weights": B.weighed(a.no_weights, n_cal, mode)}], csv=a.csv)
+    L.finish(rec, t0, a.csv, B.summarise, redraws)
 
 
 if __name__ == "__main__":

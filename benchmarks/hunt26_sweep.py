@@ -46,7 +46,6 @@ session-26 hunt), ``--sets solder,vlt``, ``--modes frozen``, ``--models nb``, ``
 
 from __future__ import annotations
 
-import argparse
 import sys
 import time
 from pathlib import Path
@@ -58,6 +57,7 @@ from sklearn.base import clone
 from probwrap import CalibrationWrapper, PriorShiftWrapper
 
 sys.path.insert(0, str(Path(__file__).parent))
+import _hunt_loop as L  # noqa: E402
 import hunt21_sweep as H  # noqa: E402
 import hunt24_sweep as B  # noqa: E402
 import hunt25_sweep as C  # noqa: E402
@@ -145,11 +145,7 @@ def psw_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str,
     """PriorShiftWrapper fitted on the cell's rows, its probabilities before any ``adapt``."""
     tr, cal, te = B.draw(task, n_cal, mode, seed)
     X, y = task.X, task.y
-    Xc, yc = X.iloc[cal].reset_index(drop=True), y[cal]
-    Xt, yt = X.iloc[te].reset_index(drop=True), y[te]
-    classes = np.unique(yc)
-    keep = np.isin(yt, classes)
-    Xt, yt = Xt[keep].reset_index(drop=True), yt[keep]
+    Xc, yc, Xt, yt, classes = L.split_cell(X, y, cal, te)
     where = f"{task.name}/{mname}/{mode}/n{n_cal}/s{seed}/psw"
     caught: list = []
     try:
@@ -187,27 +183,16 @@ def summarise_psw(df: pd.DataFrame) -> None:
     for _, x in bad.head(10).iterrows():
         print(f"  {x['set']}/{x['model']}/{x['mode']}/n{x['n_cal']}/s{x['seed']} {x['r']:.3f}"
               f" (psw {x['psw']:.3f} sig {x['sig']:.3f} own {x['own']:.3f} cal {x['cal']:.3f})")
-    names = sorted({n for s in df["psw_warn"].dropna() for n in str(s).split(",") if n})
-    print(f"warnings raised by psw: {', '.join(names) or 'none'}")
+    print(f"warnings raised by psw: {', '.join(L.warning_names(df['psw_warn'].dropna())) or 'none'}")
 
 
 def main(argv: list[str]) -> None:
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--quick", action="store_true")
-    ap.add_argument("--seeds", type=int, default=1)
-    ap.add_argument("--first-seed", type=int, default=0)
-    ap.add_argument("--sets", default="")
-    ap.add_argument("--models", default="lr,rf,nb,gb")
-    ap.add_argument("--modes", default="cross,frozen,rare")
-    ap.add_argument("--sizes", default="", help="only these numbers of labelled rows, e.g. 40,100")
+    ap = L.sweep_arguments(__doc__.split("\n")[0], models="lr,rf,nb,gb")
     ap.add_argument("--no-weights", action="store_true")
     ap.add_argument("--no-psw", action="store_true")
-    ap.add_argument("--list", action="store_true")
-    ap.add_argument("--csv", default="")
-    ap.add_argument("--from-csv", default="", help="summarise saved cells (with --csv's columns) without refitting")
     a = ap.parse_args(argv)
     if a.from_csv:
-        df = pd.concat([pd.read_csv(f) for f in a.from_csv.split(",")], ignore_index=True)
+        df = L.from_csv(a.from_csv)
         B.summarise(df)
         summarise_psw(df)
         C.redraws(df)
@@ -215,43 +200,25 @@ def main(argv: list[str]) -> None:
     assert CalibrationWrapper().method == "auto"
     all_tasks = tasks()
     if a.list:
-        for t in all_tasks:
-            share = pd.Series(t.y).value_counts(normalize=True).min()
-            print(f"{t.name:16s} rows {t.units:5d} features {t.X.shape[1]:3d} rarest {share:.3f}  {t.note}")
+        L.list_tasks(all_tasks)
         return
     ms = B.models()
     names = QUICK if a.quick else (a.sets.split(",") if a.sets else [t.name for t in all_tasks])
     chosen = [t for t in all_tasks if t.name in names]
     sizes = {int(s) for s in a.sizes.split(",")} if a.sizes else None
     rec = H.Rec()
+
+    def cell(t, m, n_cal, mode, s, weights):
+        before = len(rec.rows)
+        B.one_cell(rec, t, m, ms[m], n_cal, mode, s, weights=weights)
+        if len(rec.rows) > before and not a.no_psw:
+            psw_cell(rec, t, m, ms[m], n_cal, mode, s, rec.rows[-1])
+
     t0 = time.time()
-    for t in chosen:
-        print(f"{t.name} ({t.units} rows): {t.note}", flush=True)
-        binary = len(np.unique(t.y)) == 2
-        for mode in a.modes.split(","):
-            if mode == "rare" and (not binary or np.mean(t.y) < 2 * B.RARE):
-                continue
-            for n_cal in B.sizes_for(t, mode):
-                if sizes and n_cal not in sizes:
-                    continue
-                for m in a.models.split(","):
-                    for s in range(a.first_seed, a.first_seed + a.seeds):
-                        before = len(rec.rows)
-                        B.one_cell(rec, t, m, ms[m], n_cal, mode, s,
-                                   weights=not a.no_weights and n_cal == B.WEIGHT_SIZE and mode != "rare")
-                        if len(rec.rows) > before:
-                            if not a.no_psw:
-                                psw_cell(rec, t, m, ms[m], n_cal, mode, s, rec.rows[-1])
-                            rec.rows[-1]["seconds"] = round(time.time() - t0, 1)
-        if a.csv:
-            pd.DataFrame(rec.rows).to_csv(a.csv, index=False)
-    df = pd.DataFrame(rec.rows)
-    B.summarise(df)
-    summarise_psw(df)
-    C.redraws(df)
-    if a.csv:
-        df.to_csv(a.csv, index=False)
-    print(f"\n{len(rec.flags)} flags; {time.time() - t0:.0f} s")
+    L.run_cells(rec, chosen, a.modes.split(","), B.sizes_for, a.models.split(","),
+                range(a.first_seed, a.first_seed + a.seeds), cell, t0=t0, keep_size=lambda n: not sizes or n in sizes,
+                variants=lambda t, mode, n_cal: [{"weights": B.weighed(a.no_weights, n_cal, mode)}], csv=a.csv)
+    L.finish(rec, t0, a.csv, B.summarise, summarise_psw, C.redraws)
 
 
 if __name__ == "__main__":

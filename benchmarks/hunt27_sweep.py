@@ -59,7 +59,6 @@ knn,tree,gb,sgd,lr``."""
 
 from __future__ import annotations
 
-import argparse
 import sys
 import time
 import warnings
@@ -69,14 +68,13 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 from sklearn.base import clone
-from sklearn.calibration import CalibratedClassifierCV
 from sklearn.ensemble import HistGradientBoostingClassifier
-from sklearn.frozen import FrozenEstimator
 from sklearn.tree import DecisionTreeClassifier
 
 from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper
 
 sys.path.insert(0, str(Path(__file__).parent))
+import _hunt_loop as L  # noqa: E402
 import hunt21_sweep as H  # noqa: E402
 import hunt24_sweep as B  # noqa: E402
 
@@ -221,8 +219,7 @@ def _fit(est, X, y, w, caught: list):
     return est
 
 
-def _warned(s) -> bool:
-    return isinstance(s, str) and "*" in s
+_warned = L.warned
 
 
 def _tally(X: pd.DataFrame, y: np.ndarray):
@@ -232,19 +229,7 @@ def _tally(X: pd.DataFrame, y: np.ndarray):
     return first, counts.astype(float)
 
 
-def _sig(base, X, y, w, frozen: bool):
-    _, counts = np.unique(y, return_counts=True)
-    cv = int(min(5, counts.min()))
-    if cv < 2:
-        return None
-    est = (CalibratedClassifierCV(base, method="sigmoid", cv=cv, ensemble=False) if frozen
-           else CalibratedClassifierCV(clone(base), method="sigmoid", cv=cv))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        try:
-            return est.fit(X, y) if w is None else est.fit(X, y, sample_weight=w)
-        except ValueError:
-            return None
+_sig = L.sigmoid_reference  # (base, X, y, w, frozen)
 
 
 def _scale_check(rec, where, make, Xc, yc, w0, Xt, row, kind, model_moves):
@@ -277,15 +262,11 @@ def one_cell(rec: H.Rec, task: T27, mname: str, model, n_cal: int, mode: str, se
     tr, cal, te = B.draw(task, n_cal, mode, seed)
     X = task.raw if mname == "hgbcat" else task.X
     y = task.y
-    Xc, yc = X.iloc[cal].reset_index(drop=True), y[cal]
-    Xt, yt = X.iloc[te].reset_index(drop=True), y[te]
+    Xc, yc, Xt, yt, classes = L.split_cell(X, y, cal, te)
     w = None
-    if task.table:
+    if task.table:  # the same classes: each (row, label) pair keeps one copy
         first, w = _tally(Xc, yc)
         Xc, yc = Xc.iloc[first].reset_index(drop=True), yc[first]
-    classes = np.unique(yc)
-    keep = np.isin(yt, classes)
-    Xt, yt = Xt[keep].reset_index(drop=True), yt[keep]
     if len(classes) < 2:
         return
     where = f"{task.name}/{mname}/{mode}/n{n_cal}/s{seed}"
@@ -293,15 +274,9 @@ def one_cell(rec: H.Rec, task: T27, mname: str, model, n_cal: int, mode: str, se
            "k": len(classes), "minority": int(np.min(np.unique(y[cal], return_counts=True)[1])),
            "weights": "counts" if task.table else "none"}
     try:
-        if mode == "frozen":
-            fitted = _fit(clone(model), X.iloc[tr].reset_index(drop=True), y[tr], None, [])
-            if len(np.unique(y[tr])) != len(classes) or not np.array_equal(fitted.classes_, classes):
-                return
-            base = FrozenEstimator(fitted)
-            own = fitted
-        else:
-            base = clone(model)
-            own = _fit(clone(model), Xc, yc, w, [])
+        base, own = L.base_and_own(model, X, y, tr, Xc, yc, w, _fit)
+        if tr is not None and (len(np.unique(y[tr])) != len(classes) or not np.array_equal(own.classes_, classes)):
+            return
         row["own"] = H.log_loss(yt, own.predict_proba(Xt), classes)
     except Exception as e:  # noqa: BLE001
         rec.flag(where, f"model itself fails: {type(e).__name__}: {e}"[:200])
@@ -314,23 +289,7 @@ def one_cell(rec: H.Rec, task: T27, mname: str, model, n_cal: int, mode: str, se
     row["sig"] = np.nan if sig is None else H.log_loss(yt, sig.predict_proba(Xt), classes)
 
     def run(tag, make):
-        caught: list = []
-        np.random.seed(1000 + seed)  # noqa: NPY002  (random_state=None shuffles with the global state)
-        try:
-            est = _fit(make(), Xc, yc, w, caught)
-            P = est.predict_proba(Xt)
-        except Exception as e:  # noqa: BLE001
-            rec.flag(f"{where}/{tag}", f"crash {type(e).__name__}: {e}"[:300])
-            row[f"{tag}_crash"] = 1
-            return None
-        H.check_proba(rec, f"{where}/{tag}", P)
-        row[tag] = H.log_loss(yt, P, classes)
-        row[f"{tag}_01"] = int(np.sum((P <= 0) | (P >= 1)))
-        row[f"{tag}_warn"] = ",".join(caught)
-        if np.isfinite(row["sig"]) and row[tag] > 1.10 * row["sig"] and row[tag] - row["sig"] > 0.01:
-            rec.flag(where, f"{tag} {row[tag]:.3f} against sigmoid {row['sig']:.3f}, own {row['own']:.3f}"
-                     f" ({getattr(est, 'method_', '')}; {row[f'{tag}_warn'] or 'no warning'})")
-        return est
+        return L.score_proba(rec, row, where, tag, make, _fit, Xc, yc, w, Xt, yt, classes, seed)
 
     est = run("cal", lambda: CalibrationWrapper(wrapped()))
     if est is not None:
@@ -353,7 +312,7 @@ def one_cell(rec: H.Rec, task: T27, mname: str, model, n_cal: int, mode: str, se
         pos = yt == classes[1]
 
         def tcost(a):
-            return float(np.mean(np.where(a & ~pos, 1.0, 0.0) + np.where(~a & pos, 4.0, 0.0)))
+            return float(np.mean(L.cost_rows(a, pos)))
 
         def policy():
             return CostPolicyWrapper(wrapped(), costs={"fp": 1.0, "fn": 4.0}, strategy="tuned", random_state=seed)
@@ -435,7 +394,7 @@ def summarise(df: pd.DataFrame) -> None:
                   f" {int((moved & still).sum())} (without a WeightScaleWarning: {int(quiet.sum())},"
                   f" largest {g.loc[quiet, f'w_{kind}_diff'].max() if quiet.any() else 0:.3g}),"
                   f" largest difference {g.loc[still, f'w_{kind}_diff'].max():.3g}")
-    names = sorted({n for c in df.columns if c.endswith("_warn") for s in df[c].dropna() for n in str(s).split(",") if n})
+    names = L.warning_names(s for c in df.columns if c.endswith("_warn") for s in df[c].dropna())
     print("warnings seen (* probwrap's): " + (", ".join(names) or "none"))
 
 
@@ -496,18 +455,8 @@ def fold_check(task_list, model_names: list[str], seeds: int) -> pd.DataFrame:
 
 
 def main(argv: list[str]) -> None:
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--quick", action="store_true")
-    ap.add_argument("--seeds", type=int, default=1)
-    ap.add_argument("--first-seed", type=int, default=0)
-    ap.add_argument("--sets", default="")
-    ap.add_argument("--models", default="lr,rf,nb,gb,tree,hgbcat")
-    ap.add_argument("--modes", default="cross,frozen,rare")
-    ap.add_argument("--sizes", default="")
+    ap = L.sweep_arguments(__doc__.split("\n")[0], models="lr,rf,nb,gb,tree,hgbcat")
     ap.add_argument("--no-fixed", action="store_true")
-    ap.add_argument("--list", action="store_true")
-    ap.add_argument("--csv", default="")
-    ap.add_argument("--from-csv", default="")
     ap.add_argument("--fold-check", action="store_true",
                     help="predict_with's rule: refit against fold models on the binary sets (--sets, --models, --seeds)")
     ap.add_argument("--from-module", default="", help="with --fold-check: another sweep's sets, e.g. hunt26_sweep")
@@ -524,7 +473,7 @@ def main(argv: list[str]) -> None:
             d.to_csv(a.csv, index=False)
         return
     if a.from_csv:
-        summarise(pd.concat([pd.read_csv(f) for f in a.from_csv.split(",")], ignore_index=True))
+        summarise(L.from_csv(a.from_csv))
         return
     assert CalibrationWrapper().method == "auto"
     all_tasks = tasks()
@@ -541,31 +490,13 @@ def main(argv: list[str]) -> None:
     modes = a.modes.split(",") if a.modes != "cross,frozen,rare" or not a.quick else ["cross", "frozen"]
     rec = H.Rec()
     t0 = time.time()
-    for t in chosen:
-        print(f"{t.name} ({t.units} rows): {t.note}", flush=True)
-        binary = len(np.unique(t.y)) == 2
-        for mode in modes:
-            if mode == "rare" and (not binary or np.mean(t.y) < 2 * B.RARE):
-                continue
-            for n_cal in B.sizes_for(t, mode):
-                if sizes and n_cal not in sizes:
-                    continue
-                for m in a.models.split(","):
-                    if m == "hgbcat" and t.raw is None:
-                        continue
-                    for s in range(a.first_seed, a.first_seed + a.seeds):
-                        before = len(rec.rows)
-                        one_cell(rec, t, m, ms[m], n_cal, mode, s, fixed=not a.no_fixed,
-                                 weights=(n_cal == B.WEIGHT_SIZE or t.table) and mode != "rare")
-                        if len(rec.rows) > before:
-                            rec.rows[-1]["seconds"] = round(time.time() - t0, 1)
-        if a.csv:
-            pd.DataFrame(rec.rows).to_csv(a.csv, index=False)
-    df = pd.DataFrame(rec.rows)
-    summarise(df)
-    if a.csv:
-        df.to_csv(a.csv, index=False)
-    print(f"\n{len(rec.flags)} flags; {time.time() - t0:.0f} s")
+    L.run_cells(rec, chosen, modes, B.sizes_for, a.models.split(","), range(a.first_seed, a.first_seed + a.seeds),
+                lambda t, m, n_cal, mode, s, **kw: one_cell(rec, t, m, ms[m], n_cal, mode, s, **kw), t0=t0,
+                keep_size=lambda n: not sizes or n in sizes, keep_model=lambda t, m: m != "hgbcat" or t.raw is not None,
+                variants=lambda t, mode, n_cal: [{"fixed": not a.no_fixed,
+                                                  "weights": (n_cal == B.WEIGHT_SIZE or t.table) and mode != "rare"}],
+                csv=a.csv)
+    L.finish(rec, t0, a.csv, summarise)
 
 
 if __name__ == "__main__":

@@ -59,10 +59,8 @@ A,B``, ``--list``, ``--no-fixed``, ``--no-weights``.
 
 from __future__ import annotations
 
-import argparse
 import sys
 import time
-import warnings
 from pathlib import Path
 
 import numpy as np
@@ -71,7 +69,6 @@ from sklearn.base import clone
 from sklearn.calibration import CalibratedClassifierCV
 from sklearn.discriminant_analysis import QuadraticDiscriminantAnalysis
 from sklearn.ensemble import ExtraTreesClassifier, HistGradientBoostingClassifier
-from sklearn.frozen import FrozenEstimator
 from sklearn.gaussian_process import GaussianProcessClassifier
 from sklearn.linear_model import LogisticRegression
 from sklearn.naive_bayes import GaussianNB
@@ -83,6 +80,7 @@ from sklearn.svm import SVC
 from probwrap import CalibrationWrapper, CostPolicyWrapper
 
 sys.path.insert(0, str(Path(__file__).parent))
+import _hunt_loop as L  # noqa: E402
 import hunt21_sweep as H  # noqa: E402
 import hunt24_sweep as B  # noqa: E402
 import hunt27_sweep as K  # noqa: E402
@@ -160,29 +158,15 @@ def brier(y, P, classes) -> float:
 
 
 def _sig(base, X, y, w, frozen: bool):
-    _, counts = np.unique(y, return_counts=True)
-    cv = int(min(5, counts.min()))
-    if cv < 2:
-        return None
-    est = (CalibratedClassifierCV(base, method="sigmoid", cv=cv, ensemble=False) if frozen
-           else CalibratedClassifierCV(clone(base), method="sigmoid", cv=cv))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        try:
-            return est.fit(X, y) if w is None else est.fit(X, y, sample_weight=w)
-        except (ValueError, TypeError):
-            return None
+    """scikit-learn's sigmoid, or None (also where the model takes no ``sample_weight``)."""
+    return L.sigmoid_reference(base, X, y, w, frozen, errors=(ValueError, TypeError))
 
 
 def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str, seed: int, fixed: bool,
              wkind: str) -> None:
     tr, cal, te = B.draw(task, n_cal, mode, seed)
     X, y = task.X, task.y
-    Xc, yc = X.iloc[cal].reset_index(drop=True), y[cal]
-    Xt, yt = X.iloc[te].reset_index(drop=True), y[te]
-    classes = np.unique(yc)
-    keep = np.isin(yt, classes)
-    Xt, yt = Xt[keep].reset_index(drop=True), yt[keep]
+    Xc, yc, Xt, yt, classes = L.split_cell(X, y, cal, te)
     if len(classes) < 2:
         return
     w = None
@@ -194,14 +178,9 @@ def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str,
     row = {"set": task.name, "model": mname, "mode": mode, "n_cal": len(cal), "seed": seed, "weights": wkind,
            "k": len(classes), "minority": int(np.min(np.unique(yc, return_counts=True)[1]))}
     try:
-        if mode == "frozen":
-            fitted = K._fit(clone(model), X.iloc[tr].reset_index(drop=True), y[tr], None, [])
-            if not np.array_equal(fitted.classes_, classes):
-                return
-            base, own = FrozenEstimator(fitted), fitted
-        else:
-            base = clone(model)
-            own = K._fit(clone(model), Xc, yc, None, [])
+        base, own = L.base_and_own(model, X, y, tr, Xc, yc, None, K._fit)
+        if tr is not None and not np.array_equal(own.classes_, classes):
+            return
         Po = own.predict_proba(Xt)
     except Exception as e:  # noqa: BLE001
         rec.flag(where, f"model itself fails: {type(e).__name__}: {e}"[:200])
@@ -218,24 +197,8 @@ def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str,
     row["sig_b"] = np.nan if Ps is None else brier(yt, Ps, classes)
 
     def run(tag, make):
-        caught: list = []
-        np.random.seed(1000 + seed)  # noqa: NPY002  (random_state=None shuffles with the global state)
-        try:
-            est = K._fit(make(), Xc, yc, w, caught)
-            P = est.predict_proba(Xt)
-        except Exception as e:  # noqa: BLE001
-            row[f"{tag}_crash"] = f"{type(e).__name__}: {e}"[:160]
-            row[f"{tag}_warn"] = ",".join(caught)
-            rec.flag(f"{where}/{tag}", f"raises {row[f'{tag}_crash']}")
-            return None
-        H.check_proba(rec, f"{where}/{tag}", P)
-        row[tag], row[f"{tag}_b"] = H.log_loss(yt, P, classes), brier(yt, P, classes)
-        row[f"{tag}_01"] = int(np.sum((P <= 0) | (P >= 1)))
-        row[f"{tag}_warn"] = ",".join(caught)
-        if np.isfinite(row["sig"]) and row[tag] > 1.10 * row["sig"] and row[tag] - row["sig"] > 0.01:
-            rec.flag(where, f"{tag} {row[tag]:.3f} against sigmoid {row['sig']:.3f}, own {row['own']:.3f}"
-                     f" ({getattr(est, 'method_', '')}; {row[f'{tag}_warn'] or 'no warning'})")
-        return est
+        return L.score_proba(rec, row, where, tag, make, K._fit, Xc, yc, w, Xt, yt, classes, seed, brier=brier,
+                             crash_chars=160)
 
     est = run("cal", lambda: CalibrationWrapper(wrapped()))
     if est is not None:
@@ -248,7 +211,7 @@ def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str,
         pos = yt == classes[1]
 
         def tcost(a):
-            return float(np.mean(np.where(a & ~pos, 1.0, 0.0) + np.where(~a & pos, 4.0, 0.0)))
+            return float(np.mean(L.cost_rows(a, pos)))
 
         if Ps is not None:
             row["cost_sig"] = tcost(Ps[:, 1] > 0.2)
@@ -278,8 +241,7 @@ def one_cell(rec: H.Rec, task: H.Task, mname: str, model, n_cal: int, mode: str,
     rec.rows.append(row)
 
 
-def _warned(s) -> bool:
-    return isinstance(s, str) and "*" in s
+_warned = L.warned
 
 
 def summarise(df: pd.DataFrame) -> None:
@@ -362,38 +324,26 @@ def summarise(df: pd.DataFrame) -> None:
             print(f"  counts against counts / sum: {len(j)} cells, map changed in {int(ch.sum())}, log loss moved"
                   f" by over 0.001 in {int((dif > 1e-3).sum())} (of them without a WeightScaleWarning:"
                   f" {int(((dif > 1e-3) & ~wn).sum())})")
-    names = sorted({n for c in df.columns if c.endswith("_warn") for s in df[c].dropna() for n in str(s).split(",") if n})
+    names = L.warning_names(s for c in df.columns if c.endswith("_warn") for s in df[c].dropna())
     print("warnings seen (* probwrap's): " + (", ".join(names) or "none"))
     if "cal_method" in df:
         print("auto chose: " + ", ".join(f"{k} {v}" for k, v in df["cal_method"].value_counts().items()))
 
 
 def main(argv: list[str]) -> None:
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--quick", action="store_true")
-    ap.add_argument("--seeds", type=int, default=1)
-    ap.add_argument("--first-seed", type=int, default=0)
-    ap.add_argument("--sets", default="")
-    ap.add_argument("--models", default="")
-    ap.add_argument("--modes", default="cross,frozen,rare")
-    ap.add_argument("--sizes", default="")
+    ap = L.sweep_arguments(__doc__.split("\n")[0])
     ap.add_argument("--no-fixed", action="store_true")
     ap.add_argument("--no-weights", action="store_true")
     ap.add_argument("--weight-kinds", default="none,wcount,wnorm",
                     help="which of the weight setups to run, e.g. wcount for the count weights alone")
-    ap.add_argument("--list", action="store_true")
-    ap.add_argument("--csv", default="")
-    ap.add_argument("--from-csv", default="")
     a = ap.parse_args(argv)
     if a.from_csv:
-        summarise(pd.concat([pd.read_csv(f) for f in a.from_csv.split(",")], ignore_index=True))
+        summarise(L.from_csv(a.from_csv))
         return
     assert CalibrationWrapper().method == "auto"
     all_tasks = tasks()
     if a.list:
-        for t in all_tasks:
-            share = pd.Series(t.y).value_counts(normalize=True).min()
-            print(f"{t.name:14s} rows {t.units:5d} features {t.X.shape[1]:3d} rarest {share:.3f}  {t.note}")
+        L.list_tasks(all_tasks, width=14)
         return
     ms = models()
     names = QUICK if a.quick and not a.sets else (a.sets.split(",") if a.sets else [t.name for t in all_tasks])
@@ -401,33 +351,20 @@ def main(argv: list[str]) -> None:
     modes = ["cross", "frozen"] if a.quick and a.modes == "cross,frozen,rare" else a.modes.split(",")
     sizes = {int(s) for s in a.sizes.split(",")} if a.sizes else set(SIZES)
     rec = H.Rec()
+
+    def variants(t, mode, n_cal):
+        wks = ["none"]
+        if not a.no_weights and n_cal == 100 and mode != "rare":
+            wks += ["wcount", "wnorm"]
+        return [{"fixed": not a.no_fixed and wk == "none", "wkind": wk} for wk in wks
+                if wk in a.weight_kinds.split(",")]
+
     t0 = time.time()
-    for t in [t for t in all_tasks if t.name in names]:
-        print(f"{t.name} ({t.units} rows): {t.note}", flush=True)
-        binary = len(np.unique(t.y)) == 2
-        for mode in modes:
-            if mode == "rare" and (not binary or np.mean(t.y) < 2 * B.RARE):
-                continue
-            for n_cal in B.sizes_for(t, mode):
-                if n_cal not in sizes:
-                    continue
-                for m in mnames:
-                    for s in range(a.first_seed, a.first_seed + a.seeds):
-                        wks = ["none"]
-                        if not a.no_weights and n_cal == 100 and mode != "rare":
-                            wks += ["wcount", "wnorm"]
-                        for wk in [k for k in wks if k in a.weight_kinds.split(",")]:
-                            before = len(rec.rows)
-                            one_cell(rec, t, m, ms[m], n_cal, mode, s, fixed=not a.no_fixed and wk == "none", wkind=wk)
-                            if len(rec.rows) > before:
-                                rec.rows[-1]["seconds"] = round(time.time() - t0, 1)
-        if a.csv:
-            pd.DataFrame(rec.rows).to_csv(a.csv, index=False)
-    df = pd.DataFrame(rec.rows)
-    summarise(df)
-    if a.csv:
-        df.to_csv(a.csv, index=False)
-    print(f"\n{len(rec.flags)} flags; {time.time() - t0:.0f} s")
+    L.run_cells(rec, [t for t in all_tasks if t.name in names], modes, B.sizes_for, mnames,
+                range(a.first_seed, a.first_seed + a.seeds),
+                lambda t, m, n_cal, mode, s, **kw: one_cell(rec, t, m, ms[m], n_cal, mode, s, **kw), t0=t0,
+                keep_size=lambda n: n in sizes, variants=variants, csv=a.csv)
+    L.finish(rec, t0, a.csv, summarise)
 
 
 if __name__ == "__main__":

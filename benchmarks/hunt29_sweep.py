@@ -51,7 +51,6 @@ benchmarks/hunt29_sweep.py --csv F`` (every set and model, two seeds; about twen
 
 from __future__ import annotations
 
-import argparse
 import sys
 import time
 import warnings
@@ -62,7 +61,6 @@ import pandas as pd
 from sklearn.base import clone
 from sklearn.compose import make_column_selector, make_column_transformer
 from sklearn.ensemble import GradientBoostingClassifier, RandomForestClassifier
-from sklearn.frozen import FrozenEstimator
 from sklearn.impute import SimpleImputer
 from sklearn.linear_model import LogisticRegression
 from sklearn.naive_bayes import GaussianNB
@@ -74,6 +72,7 @@ from sklearn.svm import SVC
 from probwrap import CalibrationWrapper, CostPolicyWrapper
 
 sys.path.insert(0, str(Path(__file__).parent))
+import _hunt_loop as L  # noqa: E402
 import hunt21_sweep as H  # noqa: E402
 import hunt24_sweep as B  # noqa: E402
 import hunt27_sweep as K  # noqa: E402
@@ -160,11 +159,7 @@ def models() -> dict:
 
 
 def sizes_for(task: H.Task, mode: str) -> list[int]:
-    room = task.units - (min(300, int(B.FROZEN_TRAIN * task.units)) if mode == "frozen" else 0)
-    if mode == "rare":
-        room = int(np.sum(task.y == 0) / (1 - B.RARE))
-        return [s for s in SIZES[1:] if s <= 0.6 * room]
-    return [s for s in SIZES if s <= 0.6 * room] or [max(20, int(0.5 * room))]
+    return L.sizes_for(task, mode, SIZES, smallest=lambda room: max(20, int(0.5 * room)))
 
 
 def _paired(a: np.ndarray, b: np.ndarray) -> tuple[float, float]:
@@ -176,11 +171,7 @@ def one_cell(rec: H.Rec, task: K.T27, mname: str, model, n_cal: int, mode: str, 
              wkind: str = "none") -> None:
     tr, cal, te = B.draw(task, n_cal, mode, seed)
     X, y = (task.raw if mname == "pipe" else task.X), task.y
-    Xc, yc = X.iloc[cal].reset_index(drop=True), y[cal]
-    Xt, yt = X.iloc[te].reset_index(drop=True), y[te]
-    classes = np.unique(yc)
-    keep = np.isin(yt, classes)
-    Xt, yt = Xt[keep].reset_index(drop=True), yt[keep]
+    Xc, yc, Xt, yt, classes = L.split_cell(X, y, cal, te)
     if len(classes) < 2:
         return
     w = None
@@ -193,14 +184,9 @@ def one_cell(rec: H.Rec, task: K.T27, mname: str, model, n_cal: int, mode: str, 
     row = {"set": task.name, "model": mname, "mode": mode, "n_cal": len(cal), "seed": seed, "weights": wkind,
            "k": len(classes), "minority": int(np.min(np.unique(y[cal], return_counts=True)[1])), "n_test": len(yt)}
     try:
-        if mode == "frozen":
-            fitted = K._fit(clone(model), X.iloc[tr].reset_index(drop=True), y[tr], None, [])
-            if not np.array_equal(fitted.classes_, classes):
-                return
-            base, own = FrozenEstimator(fitted), fitted
-        else:
-            base = clone(model)
-            own = K._fit(clone(model), Xc, yc, None if mname == "pipe" else w, [])
+        base, own = L.base_and_own(model, X, y, tr, Xc, yc, None if mname == "pipe" else w, K._fit)
+        if tr is not None and not np.array_equal(own.classes_, classes):
+            return
         Po = own.predict_proba(Xt)
     except Exception as e:  # noqa: BLE001
         rec.flag(where, f"model itself fails: {type(e).__name__}: {e}"[:200])
@@ -217,24 +203,8 @@ def one_cell(rec: H.Rec, task: K.T27, mname: str, model, n_cal: int, mode: str, 
     row["sig_b"] = np.nan if Ps is None else P.brier(yt, Ps, classes)
 
     def run(tag, make):
-        caught: list = []
-        np.random.seed(1000 + seed)  # noqa: NPY002  (random_state=None shuffles with the global state)
-        try:
-            est = K._fit(make(), Xc, yc, w, caught)
-            Pr = est.predict_proba(Xt)
-        except Exception as e:  # noqa: BLE001
-            row[f"{tag}_crash"] = f"{type(e).__name__}: {e}"[:200]
-            row[f"{tag}_warn"] = ",".join(caught)
-            rec.flag(f"{where}/{tag}", f"raises {row[f'{tag}_crash']}")
-            return None
-        H.check_proba(rec, f"{where}/{tag}", Pr)
-        row[tag], row[f"{tag}_b"] = H.log_loss(yt, Pr, classes), P.brier(yt, Pr, classes)
-        row[f"{tag}_01"] = int(np.sum((Pr <= 0) | (Pr >= 1)))
-        row[f"{tag}_warn"] = ",".join(caught)
-        if np.isfinite(row["sig"]) and row[tag] > 1.10 * row["sig"] and row[tag] - row["sig"] > 0.01:
-            rec.flag(where, f"{tag} {row[tag]:.3f} against sigmoid {row['sig']:.3f}, own {row['own']:.3f}"
-                     f" ({getattr(est, 'method_', '')}; {row[f'{tag}_warn'] or 'no warning'})")
-        return est
+        return L.score_proba(rec, row, where, tag, make, K._fit, Xc, yc, w, Xt, yt, classes, seed, brier=P.brier,
+                             crash_chars=200)
 
     est = run("cal", lambda: CalibrationWrapper(wrapped()))
     if est is not None:
@@ -250,7 +220,7 @@ def one_cell(rec: H.Rec, task: K.T27, mname: str, model, n_cal: int, mode: str, 
     pos = yt == classes[1]
 
     def rowcost(a):
-        return np.where(a & ~pos, 1.0, 0.0) + np.where(~a & pos, fn, 0.0)
+        return L.cost_rows(a, pos, fn)
 
     bayes = 1.0 / (1.0 + fn)
     ref_sig = None if Ps is None else rowcost(Ps[:, 1] > bayes)
@@ -327,22 +297,12 @@ def summarise(df: pd.DataFrame) -> None:
 
 
 def main(argv: list[str]) -> None:
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--quick", action="store_true")
-    ap.add_argument("--seeds", type=int, default=2)
-    ap.add_argument("--first-seed", type=int, default=0)
-    ap.add_argument("--sets", default="")
-    ap.add_argument("--models", default="")
-    ap.add_argument("--modes", default="cross,frozen,rare")
-    ap.add_argument("--sizes", default="")
+    ap = L.sweep_arguments(__doc__.split("\n")[0], seeds=2)
     ap.add_argument("--no-fixed", action="store_true")
     ap.add_argument("--table", action="store_true", help="also the count table tallied back (counts, counts / sum)")
-    ap.add_argument("--list", action="store_true")
-    ap.add_argument("--csv", default="")
-    ap.add_argument("--from-csv", default="")
     a = ap.parse_args(argv)
     if a.from_csv:
-        summarise(pd.concat([pd.read_csv(f) for f in a.from_csv.split(",")], ignore_index=True))
+        summarise(L.from_csv(a.from_csv))
         return
     all_tasks = tasks()
     if a.list:
@@ -358,33 +318,18 @@ def main(argv: list[str]) -> None:
     sizes = {int(s) for s in a.sizes.split(",")} if a.sizes else set(SIZES[:2] if a.quick else SIZES)
     seeds = 1 if a.quick else a.seeds
     rec = H.Rec()
+
+    def variants(t, mode, n_cal):
+        wks = ["none"] + (["table", "tablenorm"] if a.table and t.table else [])
+        return [{"fixed": not a.no_fixed and wk == "none" and mode == "frozen", "wkind": wk} for wk in wks]
+
     t0 = time.time()
     warnings.simplefilter("ignore", FutureWarning)
-    for t in [t for t in all_tasks if t.name in names]:
-        print(f"{t.name} ({t.units} rows): {t.note}", flush=True)
-        binary = len(np.unique(t.y)) == 2
-        for mode in modes:
-            if mode == "rare" and (not binary or np.mean(t.y) < 2 * B.RARE):
-                continue
-            for n_cal in sizes_for(t, mode):
-                if n_cal in SIZES and n_cal not in sizes:
-                    continue
-                for m in mnames:
-                    for s in range(a.first_seed, a.first_seed + seeds):
-                        wks = ["none"] + (["table", "tablenorm"] if a.table and t.table else [])
-                        for wk in wks:
-                            before = len(rec.rows)
-                            one_cell(rec, t, m, ms[m], n_cal, mode, s,
-                                     fixed=not a.no_fixed and wk == "none" and mode == "frozen", wkind=wk)
-                            if len(rec.rows) > before:
-                                rec.rows[-1]["seconds"] = round(time.time() - t0, 1)
-        if a.csv:
-            pd.DataFrame(rec.rows).to_csv(a.csv, index=False)
-    df = pd.DataFrame(rec.rows)
-    summarise(df)
-    if a.csv:
-        df.to_csv(a.csv, index=False)
-    print(f"\n{len(rec.flags)} flags; {time.time() - t0:.0f} s")
+    L.run_cells(rec, [t for t in all_tasks if t.name in names], modes, sizes_for, mnames,
+                range(a.first_seed, a.first_seed + seeds),
+                lambda t, m, n_cal, mode, s, **kw: one_cell(rec, t, m, ms[m], n_cal, mode, s, **kw), t0=t0,
+                keep_size=lambda n: n not in SIZES or n in sizes, variants=variants, csv=a.csv)
+    L.finish(rec, t0, a.csv, summarise)
 
 
 if __name__ == "__main__":

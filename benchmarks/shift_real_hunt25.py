@@ -57,9 +57,11 @@ from __future__ import annotations
 import argparse
 import time
 
+import _hunt_loop as L
 import numpy as np
 import pandas as pd
-from shift_real_hunt24 import N_LABELLED, _r, _x, one
+from _hunt_data import complete_rows
+from shift_real_hunt24 import N_LABELLED, _r, _x, one, saver
 from shift_real_hunt24 import summarise as summarise_cells
 
 
@@ -68,15 +70,7 @@ def sets():
     out = []
 
     def add(name, X, y, max_rows=4000, seed=0):
-        X = X.reset_index(drop=True)
-        X = X.loc[:, X.isna().mean() <= 0.2]  # columns mostly missing: dropped, not their rows
-        y = np.asarray(y).astype(str)
-        ok = X.notna().all(axis=1).to_numpy() & (y != "nan")
-        X, y = X[ok].reset_index(drop=True), y[ok]
-        if len(y) > max_rows:
-            idx = np.sort(np.random.default_rng(seed).choice(len(y), max_rows, replace=False))
-            X, y = X.iloc[idx].reset_index(drop=True), y[idx]
-        out.append((name, X, y))
+        out.append((name, *complete_rows(X, y, max_rows, seed)))
 
     d = _r("AER", "CartelStability")
     add("CartelStability no cartel", _x(d, ["cartel"]), d["cartel"] == "no")
@@ -182,17 +176,9 @@ def main() -> None:
     n_labelled = N_LABELLED
     if a.quick:
         a.seeds, a.models, n_labelled = 1, ["lr", "rf"], (60, 200)
-    for name, X, y in sets():
-        if a.sets and not any(s.lower() in name.lower() for s in a.sets):
-            continue
-        for seed in range(a.seeds):
-            for m in a.models:
-                try:
-                    one(name, X, y, m, seed, rows, crashes, skipped, n_labelled)
-                except Exception as e:  # noqa: BLE001 (the script's own draw, not the wrapper)
-                    crashes.append((f"{name}/{m}/s{seed} (script)", f"{type(e).__name__}: {e}"))
-        if a.out:  # after every set, so that an interrupted run keeps what it measured
-            pd.DataFrame(rows).to_csv(a.out, index=False)
+    L.run_sets(sets(), range(a.seeds), a.models,
+               lambda name, X, y, m, seed: one(name, X, y, m, seed, rows, crashes, skipped, n_labelled), crashes,
+               picked=L.picked_by(a.sets), echo=False, after_set=saver(a.out, rows))
     df = pd.DataFrame(rows)
     summarise(df, crashes, skipped)
     print(f"{time.time() - t0:.0f} s")

@@ -47,10 +47,11 @@ from __future__ import annotations
 import argparse
 import time
 
-import numpy as np
+import _hunt_loop as L
 import pandas as pd
 import shift_real_hunt24 as h24
-from shift_real_hunt24 import _r, _x, one
+from _hunt_data import complete_rows
+from shift_real_hunt24 import _r, _x, one, saver
 from shift_real_hunt25 import summarise as summarise_sets
 from sklearn.ensemble import HistGradientBoostingClassifier
 
@@ -73,15 +74,7 @@ def sets():
     out = []
 
     def add(name, X, y, max_rows=4000, seed=0):
-        X = X.reset_index(drop=True)
-        X = X.loc[:, X.isna().mean() <= 0.2]  # columns mostly missing: dropped, not their rows
-        y = np.asarray(y).astype(str)
-        ok = X.notna().all(axis=1).to_numpy() & (y != "nan")
-        X, y = X[ok].reset_index(drop=True), y[ok]
-        if len(y) > max_rows:
-            idx = np.sort(np.random.default_rng(seed).choice(len(y), max_rows, replace=False))
-            X, y = X.iloc[idx].reset_index(drop=True), y[idx]
-        out.append((name, X, y))
+        out.append((name, *complete_rows(X, y, max_rows, seed)))
 
     d = _r("wooldridge", "apple")
     add("apple no eco purchase (weak)", _x(d, ["id", "ecolbs", "state", "date"]), d["ecolbs"] == 0)
@@ -205,18 +198,9 @@ def main() -> None:
     t0 = time.time()
     if a.quick:
         a.seeds, a.n_labelled = 1, [40, 150]
-    for name, X, y in sets():
-        if a.sets and not any(s.lower() in name.lower() for s in a.sets):
-            continue
-        for seed in range(a.seed_start, a.seed_start + a.seeds):
-            for m in a.models:
-                try:
-                    one(name, X, y, m, seed, rows, crashes, skipped, tuple(a.n_labelled))
-                except Exception as e:  # noqa: BLE001 (the script's own draw, not the wrapper)
-                    crashes.append((f"{name}/{m}/s{seed} (script)", f"{type(e).__name__}: {e}"))
-                    print(f"  CRASH {name}/{m}/s{seed} (script): {type(e).__name__}: {e}")
-        if a.out:  # after every set, so that an interrupted run keeps what it measured
-            pd.DataFrame(rows).to_csv(a.out, index=False)
+    L.run_sets(sets(), range(a.seed_start, a.seed_start + a.seeds), a.models,
+               lambda name, X, y, m, seed: one(name, X, y, m, seed, rows, crashes, skipped, tuple(a.n_labelled)),
+               crashes, picked=L.picked_by(a.sets), after_set=saver(a.out, rows))
     df = pd.DataFrame(rows)
     summarise(df, crashes, skipped)
     print(f"{time.time() - t0:.0f} s")

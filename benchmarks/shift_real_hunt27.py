@@ -59,11 +59,12 @@ import argparse
 import time
 import warnings
 
+import _hunt_loop as L
 import numpy as np
 import pandas as pd
 import shift_real_hunt26  # noqa: F401  (patches shift_real_hunt24.make_model with boosting)
-from _hunt_data import complete_rows
-from shift_real_hunt24 import _r, _warnings, _x, kinds_for, one, target_shares
+from _hunt_data import complete_rows, count_cells
+from shift_real_hunt24 import _r, _warnings, _x, kinds_for, one, saver, target_shares
 from shift_real_hunt26 import summarise
 from sklearn.ensemble import HistGradientBoostingClassifier, RandomForestClassifier
 from sklearn.frozen import FrozenEstimator
@@ -144,11 +145,7 @@ def count_tables():
     out = []
 
     def add(name, X, y, n):
-        n = np.asarray(n, int)
-        keep = n > 0
-        X = pd.get_dummies(X.reset_index(drop=True), drop_first=True).astype(float)
-        out.append((name, X[keep].reset_index(drop=True), np.asarray(y).astype(str)[keep],
-                    n[keep]))
+        out.append((name, *count_cells(X, y, n)))
 
     d = _r("datasets", "esoph")
     f = d[["agegp", "alcgp", "tobgp"]]
@@ -446,38 +443,15 @@ def main() -> None:
     if a.quick:
         a.seeds, a.n_labelled, a.models, n_count = 1, [150], ["lr", "nb"], (150,)
 
-    def picked(nm: str) -> bool:
-        return not a.sets or any(s.lower() in nm.lower() for s in a.sets)
-
+    picked, seeds = L.picked_by(a.sets), range(a.seed_start, a.seed_start + a.seeds)
     if not a.only_counts:
-        for name, X, y in sets():
-            if not picked(name):
-                continue
-            for seed in range(a.seed_start, a.seed_start + a.seeds):
-                for m in a.models:
-                    try:
-                        one(name, X, y, m, seed, rows, crashes, skipped, tuple(a.n_labelled))
-                    except Exception as e:  # noqa: BLE001 (the script's own draw)
-                        crashes.append((f"{name}/{m}/s{seed} (script)",
-                                        f"{type(e).__name__}: {e}"))
-                        print(f"  CRASH {name}/{m}/s{seed} (script): {type(e).__name__}: {e}")
-            if a.out:  # after every set, so that an interrupted run keeps what it measured
-                pd.DataFrame(rows).to_csv(a.out, index=False)
+        L.run_sets(sets(), seeds, a.models,
+                   lambda name, X, y, m, seed: one(name, X, y, m, seed, rows, crashes, skipped, tuple(a.n_labelled)),
+                   crashes, picked=picked, after_set=saver(a.out, rows))
     if not a.no_counts:
-        for name, X, y, n in count_tables():
-            if not picked(name):
-                continue
-            for seed in range(a.seed_start, a.seed_start + a.seeds):
-                for m in a.models:
-                    try:
-                        count_one(name, X, y, n, m, seed, crows, ccrashes, n_count)
-                    except Exception as e:  # noqa: BLE001 (the script's own draw)
-                        ccrashes.append((f"{name}/{m}/s{seed} (script)",
-                                         f"{type(e).__name__}: {e}"))
-                        print(f"  CRASH {name}/{m}/s{seed} (script): {type(e).__name__}: {e}")
-            if a.out:
-                pd.DataFrame(crows).to_csv(a.out.replace(".csv", "") + ".counts.csv",
-                                           index=False)
+        L.run_sets(count_tables(), seeds, a.models,
+                   lambda name, X, y, n, m, seed: count_one(name, X, y, n, m, seed, crows, ccrashes, n_count),
+                   ccrashes, picked=picked, after_set=saver(a.out, crows, ".counts"))
     if rows:
         summarise(pd.DataFrame(rows), crashes, skipped)
     summarise_counts(pd.DataFrame(crows), ccrashes)

@@ -56,13 +56,14 @@ import argparse
 import time
 import warnings
 
+import _hunt_loop as L
 import numpy as np
 import pandas as pd
 import shift_real_hunt24 as h24
 import shift_real_hunt26  # noqa: F401  (patches shift_real_hunt24.make_model with boosting)
 import shift_real_hunt27 as h27
-from _hunt_data import complete_rows
-from shift_real_hunt24 import _r, _x, one
+from _hunt_data import complete_rows, count_cells
+from shift_real_hunt24 import _r, _x, one, saver
 from shift_real_hunt26 import summarise
 from sklearn.neighbors import KNeighborsClassifier
 from sklearn.pipeline import make_pipeline
@@ -122,11 +123,7 @@ def count_tables():
     out = []
 
     def add(name, X, y, n):
-        n = np.asarray(n, int)
-        keep = n > 0
-        X = pd.get_dummies(X.reset_index(drop=True).astype(str), drop_first=True).astype(float)
-        out.append((name, X[keep].reset_index(drop=True), np.asarray(y).astype(str)[keep],
-                    n[keep]))
+        out.append((name, *count_cells(X, y, n, text=True)))
 
     d = _r("MASS", "Insurance")
     f = d[["District", "Group", "Age"]]
@@ -293,37 +290,15 @@ def main() -> None:
     skipped: list = []
     t0 = time.time()
 
-    def picked(nm: str) -> bool:
-        return not a.sets or any(s.lower() in nm.lower() for s in a.sets)
-
-    seeds = range(a.seed_start, a.seed_start + a.seeds)
-    for name, X, y in (h27.sets() if a.rerun27 else sets()):
-        if not picked(name):
-            continue
-        for seed in seeds:
-            for m in models:
-                try:
-                    one(name, X, y, m, seed, rows, crashes, skipped, tuple(a.n_labelled))
-                except Exception as e:  # noqa: BLE001 (the script's own draw)
-                    crashes.append((f"{name}/{m}/s{seed} (script)", f"{type(e).__name__}: {e}"))
-                    print(f"  CRASH {name}/{m}/s{seed} (script): {type(e).__name__}: {e}")
-        if a.out:  # after every set, so that an interrupted run keeps what it measured
-            pd.DataFrame(rows).to_csv(a.out, index=False)
+    picked, seeds = L.picked_by(a.sets), range(a.seed_start, a.seed_start + a.seeds)
+    L.run_sets(h27.sets() if a.rerun27 else sets(), seeds, models,
+               lambda name, X, y, m, seed: one(name, X, y, m, seed, rows, crashes, skipped, tuple(a.n_labelled)),
+               crashes, picked=picked, after_set=saver(a.out, rows))
     if not a.no_counts and not a.rerun27:
-        for name, X, y, n in count_tables():
-            if not picked(name):
-                continue
-            for seed in seeds:
-                for m in (m for m in models if m != "knn"):  # kNN takes no sample_weight
-                    try:
-                        h27.count_one(name, X, y, n, m, seed, crows, ccrashes, N_COUNT_LABELLED)
-                    except Exception as e:  # noqa: BLE001 (the script's own draw)
-                        ccrashes.append((f"{name}/{m}/s{seed} (script)",
-                                         f"{type(e).__name__}: {e}"))
-                        print(f"  CRASH {name}/{m}/s{seed} (script): {type(e).__name__}: {e}")
-            if a.out:
-                pd.DataFrame(crows).to_csv(a.out.replace(".csv", "") + ".counts.csv",
-                                           index=False)
+        L.run_sets(count_tables(), seeds, [m for m in models if m != "knn"],  # kNN takes no sample_weight
+                   lambda name, X, y, n, m, seed: h27.count_one(name, X, y, n, m, seed, crows, ccrashes,
+                                                                N_COUNT_LABELLED),
+                   ccrashes, picked=picked, after_set=saver(a.out, crows, ".counts"))
     if rows:
         df = pd.DataFrame(rows)
         summarise(df, crashes, skipped)

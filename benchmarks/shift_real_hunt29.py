@@ -54,12 +54,13 @@ import argparse
 import time
 import warnings
 
+import _hunt_loop as L
 import numpy as np
 import pandas as pd
 import shift_real_hunt24 as h24
 import shift_real_hunt28 as h28
 from _hunt_data import complete_rows
-from shift_real_hunt24 import _r, _warnings, _x, one
+from shift_real_hunt24 import _r, _warnings, _x, one, saver
 from shift_real_hunt26 import summarise
 from sklearn.frozen import FrozenEstimator
 
@@ -266,22 +267,14 @@ def main() -> None:
     crashes: list = []
     skipped: list = []
     t0 = time.time()
-    seeds = range(a.seed_start, a.seed_start + a.seeds)
-    for name, X, y in sets():
-        if a.sets and not any(s.lower() in name.lower() for s in a.sets):
-            continue
-        for seed in seeds:
-            for m in models:
-                try:
-                    one(name, X, y, m, seed, rows, crashes, skipped, tuple(a.n_labelled))
-                    if not a.no_monitor:
-                        monitor_one(name, X, y, m, seed, mrows, crashes, tuple(a.n_labelled))
-                except Exception as e:  # noqa: BLE001 (the script's own draw)
-                    crashes.append((f"{name}/{m}/s{seed} (script)", f"{type(e).__name__}: {e}"))
-                    print(f"  CRASH {name}/{m}/s{seed} (script): {type(e).__name__}: {e}")
-        if a.out:  # after every set, so that an interrupted run keeps what it measured
-            pd.DataFrame(rows).to_csv(a.out, index=False)
-            pd.DataFrame(mrows).to_csv(a.out.replace(".csv", "") + ".monitor.csv", index=False)
+    def cell(name, X, y, m, seed):
+        one(name, X, y, m, seed, rows, crashes, skipped, tuple(a.n_labelled))
+        if not a.no_monitor:
+            monitor_one(name, X, y, m, seed, mrows, crashes, tuple(a.n_labelled))
+
+    save_rows, save_monitor = saver(a.out, rows), saver(a.out, mrows, ".monitor")
+    L.run_sets(sets(), range(a.seed_start, a.seed_start + a.seeds), models, cell, crashes,
+               picked=L.picked_by(a.sets), after_set=(lambda: (save_rows(), save_monitor())) if a.out else None)
     df = pd.DataFrame(rows)
     if len(df):
         summarise(df, crashes, skipped)
