@@ -214,10 +214,6 @@ def one(name, X, y, mname, seed, kinds, weighted, rows, few=False, exact=False):
     variants = [("frozen", PriorShiftWrapper(FrozenEstimator(model), random_state=seed), B, None),
                 ("refit", PriorShiftWrapper(make_model(mname), random_state=seed),
                  np.concatenate([A, B]), None)]
-    if weighted:
-        w = np.random.default_rng(seed + 7).gamma(2.0, size=len(B))
-        variants.append(("frozen_w", PriorShiftWrapper(FrozenEstimator(model), random_state=seed),
-                         B, w / w.sum()))
     if few:  # few labelled rows: the frozen model with 60 of B's rows (every class at least twice)
         rng60 = np.random.default_rng([seed, 60])
         B60 = np.concatenate([rng60.choice(np.flatnonzero(y[B] == c), 2, replace=False)
@@ -227,6 +223,10 @@ def one(name, X, y, mname, seed, kinds, weighted, rows, few=False, exact=False):
         if len(B) > 90:
             variants.append(("frozen60", PriorShiftWrapper(FrozenEstimator(model), random_state=seed),
                              B60, None))
+    if weighted:
+        w = np.random.default_rng(seed + 7).gamma(2.0, size=len(B))
+        variants.append(("frozen_w", PriorShiftWrapper(FrozenEstimator(model), random_state=seed),
+                         B, w / w.sum()))
     rng_t = np.random.default_rng([seed, 11])
     shares_of = {kd: None for kd in kinds}
     for vname, psw, fit_rows, w in variants:
@@ -314,9 +314,6 @@ def summarise(df: pd.DataFrame, exact: bool = False) -> None:
                        "warn"]].to_string())
     cov = df.cover.dropna().astype(bool)
     print(f"coverage (all classes' intervals hold the truth) {cov.mean():.3f} of {len(cov)}")
-    if exact:
-        print(f"cells with an exact 0/1 or non-finite adapted probability: "
-              f"{int((df.n_exact01 > 0).sum())}; largest |row sum - 1| {df.row_sum_err.max():.1e}")
     for kd, g in df.groupby("kind"):
         c = g.cover.dropna().astype(bool)
         print(f"  {kd:5s} coverage {c.mean():.3f} ({len(c)}), mean |est-truth| L1 "
@@ -344,6 +341,9 @@ def summarise(df: pd.DataFrame, exact: bool = False) -> None:
     print(sh.sort_values("r_none", ascending=False).head(6)[
         ["set", "model", "variant", "seed", "kind", "truth", "est", "r_none", "gap", "warn"]
     ].to_string())
+    if exact:
+        print(f"cells with an exact 0/1 or non-finite adapted probability: "
+              f"{int((df.n_exact01 > 0).sum())}; largest |row sum - 1| {df.row_sum_err.max():.1e}")
     miss = df[df.cover.notna() & ~df.cover.astype(bool)]
     print(f"misses {len(miss)}; without any warning from adapt: "
           f"{int((miss.warn.fillna('') == '').sum())}; binary misses by more than 0.05 "
