@@ -26,17 +26,17 @@ check counts repeated rows by their design effect (session 30)".
 from __future__ import annotations
 
 import argparse
-import os
 import sys
 import time
 import warnings
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
 from sklearn.ensemble import HistGradientBoostingClassifier
 from sklearn.frozen import FrozenEstimator
 
-sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+sys.path.insert(0, str(Path(__file__).parent))
 from feature_selected_batches import load  # noqa: E402
 
 from probwrap import PriorShiftWrapper  # noqa: E402
