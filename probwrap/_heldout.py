@@ -1008,6 +1008,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     if not isinstance(self.cv if self.cv is not None else 5, numbers.Integral):
                         raise
                     raise ValueError(self._too_many_folds(y_index, classes, exc)) from exc
+            splits = self._splits_of_weighted_rows(splitter, splits, y_index, classes, sw,
+                                                   split_params)
             fold = np.full(n, -1, dtype=int)
             for i, (_, test) in enumerate(splits):
                 if np.any(fold[test] >= 0):
@@ -1265,6 +1267,38 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                                  what, stacklevel=stacklevel, remedy=remedy,
                                  fit_remedy=fit_remedy,
                                  features=getattr(ho, "table_features", None))
+
+    def _splits_of_weighted_rows(self, splitter: Any, splits: list, y_index: np.ndarray,
+                                 classes: np.ndarray, sw: np.ndarray | None,
+                                 split_params: dict) -> list:
+        """With ``cv`` a number of folds and some rows of weight 0: the folds of the weighted
+        rows alone, each zero row held out in one fold (in turn) and in no training part.
+
+        Rows of weight 0 take part in nothing fitted (docs/weights.md), so the folds, the fold
+        models and the held-out predictions of the weighted rows are those of the same rows
+        with the zero rows dropped. Before, the zero rows took places in the stratified draw
+        and moved the weighted rows to other folds (benchmarks/weight_scale_hunt.py). Kept as
+        they are where a class has only rows of weight 0 (they stay in the fold models'
+        training parts, so the class stays among the models' classes), with groups given to
+        the splitter, or where the weighted rows cannot be split so.
+        """
+        cv = self.cv if self.cv is not None else 5
+        if (sw is None or not isinstance(cv, numbers.Integral) or split_params
+                or not np.any(sw == 0) or not np.any(sw > 0)):
+            return splits
+        pos = np.flatnonzero(sw > 0)
+        if np.unique(y_index[pos]).shape[0] < classes.shape[0]:
+            return splits
+        zero = np.flatnonzero(sw == 0)
+        try:
+            with warnings.catch_warnings():
+                warnings.filterwarnings("ignore", message="The least populated class")
+                sub = list(splitter.split(np.zeros((pos.shape[0], 1)), y_index[pos]))
+        except ValueError:
+            return splits
+        k = len(sub)
+        return [(pos[train], np.sort(np.concatenate([pos[test], zero[i::k]])))
+                for i, (train, test) in enumerate(sub)]
 
     def _splits_keeping_cells(
         self, splits: list, fold: np.ndarray, cells: np.ndarray, y_index: np.ndarray
