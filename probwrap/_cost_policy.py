@@ -24,6 +24,7 @@ from ._heldout import (
     HeldOutClassifierBase,
     HeldOutPredictions,
     _is_dask,
+    _warn_weights_too_small_for_model,
     check_fitted,
     check_rows_match,
     is_frozen,
@@ -350,6 +351,9 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
             sw, dict(fit_params),
             weights_used_here=f"strategy={self.strategy!r} fits nothing else on these rows",
         )
+        if any(k.endswith("sample_weight") for k in est_params):
+            _warn_weights_too_small_for_model(sw, self.estimator, type(self).__name__,
+                                              stacklevel=3)
         try:
             estimator = clone(self.estimator).fit(X, y_arr, **est_params)
         except ValueError as exc:  # as the held-out strategies report a fold that fails

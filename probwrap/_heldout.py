@@ -759,6 +759,43 @@ def _class_fix(smallest: str) -> str:
             "what it names.")
 
 
+#: Mean positive weight below which weights handed to a cross-fitted model get a warning: at
+#: 1e-6 of a row LogisticRegression's fixed penalty outweighs the data a millionfold and
+#: GaussianNB skips a class whose weights sum to about 0 (``np.isclose(n, 0)``, absolute
+#: tolerance 1e-8, in its update), so the fold models can give every row one probability
+#: (the threshold is our judgement: session-30 weight-scale hunt, benchmarks/weight_scale_hunt.py).
+_MODEL_WEIGHT_FLOOR = 1e-6
+
+
+def _warn_weights_too_small_for_model(sw: np.ndarray | None, estimator: Any, owner: str, *,
+                                      stacklevel: int = 4) -> None:
+    """A ``WeightScaleWarning`` when weights far below one per row reach a model fitted here.
+
+    The wrappers pass ``sample_weight`` to the model unchanged (docs/weights.md); the wrapper's
+    own steps read such weights by their ratios, but scikit-learn models read their scale.
+    Before session 30 weights x 1e-12 turned a cross-fitted GaussianNB or LogisticRegression on
+    breast cancer into a constant model with only the calibration map's Kish warning, which
+    does not name the model.
+    """
+    if sw is None:
+        return
+    positive = sw[sw > 0]
+    if not positive.size or float(positive.mean()) >= _MODEL_WEIGHT_FLOOR:
+        return
+    from .calibration._base import WeightScaleWarning
+
+    warnings.warn(
+        f"{owner}: `sample_weight` averages {float(positive.mean()):.3g} per row, and the model "
+        f"fitted here ({type(estimator).__name__}) receives the weights as given; scikit-learn "
+        "models read that scale (LogisticRegression's penalty then outweighs the data, "
+        "GaussianNB ignores a class whose weights sum to about 0), so it may give every row one "
+        "probability. Rescale the weights to sum to the number of rows "
+        "(w * len(w) / w.sum()): the wrapper's own steps read only their ratios there.",
+        WeightScaleWarning,
+        stacklevel=stacklevel,
+    )
+
+
 class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
     """Base class of the probwrap wrappers: held-out predictions, routing, tags.
 
@@ -993,6 +1030,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             est_params, split_params = self._route_fit_params(
                 sw if sample_weight is not None else None, fit_params
             )
+            if any(k.endswith("sample_weight") for k in est_params):
+                _warn_weights_too_small_for_model(sw, self.estimator, type(self).__name__)
             table = self._table_case_folds(X, y_arr, y_index, classes, sw, est_params,
                                            split_params, index=index)
             if table is not None:
