@@ -150,15 +150,19 @@ def rule_eig(m, implied):
     return means, covs, n_c
 
 
-RULES = {"own": rule_own, "floor": rule_floor, "diag": rule_diag, "eig": rule_eig}
-for _a in (5, 10, 25, 35, 50, 65):
-    RULES[f"t{_a:02d}"] = make_test(_a / 100)
-for _a in (5, 25, 50):
-    RULES[f"lo{_a:02d}"] = make_test(_a / 100, partial=True)
-for _n in (10, 20, 40):
-    RULES[f"sh{_n}"] = make_shrink(_n)
-for _a, _n in ((25, 40), (10, 40), (25, 20)):
-    RULES[f"c{_a}_{_n}"] = make_comb(_a / 100, _n)
+def rules() -> dict:
+    """Every rule by name (built when first asked for)."""
+    if not RULES:
+        RULES.update({"own": rule_own, "floor": rule_floor, "diag": rule_diag, "eig": rule_eig})
+        RULES.update({f"t{a:02d}": make_test(a / 100) for a in (5, 10, 25, 35, 50, 65)})
+        RULES.update({f"lo{a:02d}": make_test(a / 100, partial=True) for a in (5, 25, 50)})
+        RULES.update({f"sh{n}": make_shrink(n) for n in (10, 20, 40)})
+        RULES.update({f"c{a}_{n}": make_comb(a / 100, n)
+                      for a, n in ((25, 40), (10, 40), (25, 20))})
+    return RULES
+
+
+RULES: dict = {}
 CURRENT = ["floor"]
 
 
@@ -171,7 +175,7 @@ def _floored(self, moments, weights=None):
     implied = _analytic.implied_class_covs(self.calibrate(source[0]), w, self.source_prior_)
     if weights is None:
         self._rule_raw = (moments, implied)
-    return RULES[CURRENT[0]](moments, implied)
+    return rules()[CURRENT[0]](moments, implied)
 
 
 _moments = est_mod.PriorEstimator._class_score_moments
@@ -179,7 +183,7 @@ _moments = est_mod.PriorEstimator._class_score_moments
 
 def _class_score_moments(self):
     raw = getattr(self, "_rule_raw", None)
-    return RULES[CURRENT[0]](*raw) if raw is not None else _moments(self)
+    return rules()[CURRENT[0]](*raw) if raw is not None else _moments(self)
 
 
 def install() -> None:
@@ -254,7 +258,7 @@ def main() -> None:
     ap.add_argument("--seeds", nargs="*", type=int, default=[1, 2])
     ap.add_argument("--models", nargs="*", default=list(h28.MODELS))
     ap.add_argument("--n-labelled", nargs="*", type=int, default=[40, 150])
-    ap.add_argument("--rules", nargs="*", default=list(RULES))
+    ap.add_argument("--rules", nargs="*", default=list(rules()))
     ap.add_argument("--out")
     ap.add_argument("--summary", nargs="*", help="CSV files written by --out")
     a = ap.parse_args()
