@@ -1366,7 +1366,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                     # labelled rows' were read at fit) or posteriors, whatever their number (since
                     # 5 December 2026, session 25; before, only a small set whose rows came to the
                     # client, by posteriors); the ML shares of the rows, or of a larger set's tally
-                    self._warn_repeats_where_rows_live(
+                    # the mixture check counts them by their design effect, as in memory
+                    # (since session 30 of 5 December 2026)
+                    repeat_deff = self._warn_repeats_where_rows_live(
                         X, given_weight, ml_shares(est, proba, sample_weight),
                         n_rows=proba.shape[0] if target is None else target.n_rows)
             else:
@@ -1396,7 +1398,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 # Some rows are tallied: one Poisson bootstrap over tallied and in-memory rows alike
                 # (after a refit, over the rows once per fold model, with their replicates)
                 res, interval = tallied_adapt(est, source, target, proba, sample_weight, rs,
-                                              self.classes_.shape[0], folds=folds)
+                                              self.classes_.shape[0], folds=folds,
+                                              repeat_design_effect=repeat_deff)
             else:
                 rows = None if target is None else _tally_rows(target)
                 res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
@@ -1429,7 +1432,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         return labelled_row_share(keys, feature_row_keys(X), sample_weight)
 
     def _warn_repeats_where_rows_live(self, X: Any, sample_weight: Any, ml: np.ndarray,
-                                      n_rows: int | None = None, stacklevel: int = 3) -> None:
+                                      n_rows: int | None = None, stacklevel: int = 3
+                                      ) -> float | None:
         """:meth:`_warn_repeats` on Dask or Spark rows of any number: each row keyed where it
         lives by its features (where the labelled rows' features were read at ``fit``, as in
         memory) or else by its posteriors from the model and every fold model, the keys added
@@ -1438,9 +1442,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         (:func:`probwrap.shift._repeats.judge_repeats`) with ``ml`` the rows' ML shares (of a
         set beyond 20,000 rows, from its tally's bins). One more pass over the rows (it does
         not score them when keyed by features). Nothing where the labelled rows were not kept
-        as rows."""
+        as rows.
+
+        Returns the design effect the mixture check divides the rows' effective number by
+        (:func:`probwrap.shift._repeats.mixture_design_effect`) where it warned, else None, as
+        :meth:`_warn_repeats` does for rows in memory (since session 30 of 5 December 2026:
+        before, Dask and Spark rows' mixture check counted repeated rows as independent)."""
         from .scale._entry import unlabelled_repeat_tallies
-        from .shift._repeats import judge_repeats
+        from .shift._repeats import judge_repeats, mixture_design_effect
 
         est = self.prior_estimator_
         reference = self._repeat_reference(by_rows=True)
@@ -1448,13 +1457,15 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if not by_features:
             reference = self._repeat_reference()
         if reference is None or est.n_resamples == 0:
-            return
+            return None
         tallies = unlabelled_repeat_tallies(X, sample_weight, self.estimator_,
                                             self._fold_scorer(), self.classes_.shape[0],
                                             by_features, n_rows=n_rows)
         found = judge_repeats(est, reference, np.asarray(ml, dtype=float), tallies)
-        if found is not None:
-            self._repeats_warning(found, by_features, stacklevel + 1)
+        if found is None:
+            return None
+        self._repeats_warning(found, by_features, stacklevel + 1)
+        return mixture_design_effect(found)
 
     def _warn_repeats(self, proba: np.ndarray, folds: Any, sample_weight: Any,
                       stacklevel: int = 3, row_codes: np.ndarray | None = None) -> float | None:

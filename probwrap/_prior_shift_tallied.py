@@ -41,7 +41,7 @@ def _tally_rows(tally: Any) -> float:
 
 def tallied_adapt(
     est: Any, source: Any, target: Any, proba: Any, sample_weight: Any, rs: Any, k: int,
-    folds: Any = None,
+    folds: Any = None, repeat_design_effect: float | None = None,
 ) -> tuple:
     """``adapt``'s estimate and interval when the labelled (``source``) or unlabelled
     (``target``) rows are tallies; returns ``(PriorEstimate, interval)``.
@@ -53,7 +53,9 @@ def tallied_adapt(
     redraws the rows the estimate reads (every row once per fold model, one Poisson draw per
     row shared by its copies), as the in-memory bootstrap after a refit does
     (``PriorEstimator._refit_bootstrap``; since 4 December 2026, before the refit model's
-    tally)."""
+    tally). ``repeat_design_effect``: the rows' design effect of their repeats beyond chance,
+    which the mixture check reads (``PriorEstimator.estimate``; since session 30 of 5 December
+    2026)."""
     from .scale._entry import replicate_seed, tally_prior_interval
 
     rows = None if target is None else _tally_rows(target)
@@ -61,7 +63,8 @@ def tallied_adapt(
     if folds is not None and getattr(folds, "row_replicates", None) is not None:
         fold_rows = folds.rows
     res = est.estimate(proba, sample_weight, random_state=rs, effective_rows=rows,
-                       interval=False, fold_proba=None if fold_rows is None else folds)
+                       interval=False, fold_proba=None if fold_rows is None else folds,
+                       repeat_design_effect=repeat_design_effect)
     w = check_sample_weight(sample_weight, np.asarray(proba).shape[0])
     centre = res.ml_prior if res.ml_prior is not None else res.prior
     if fold_rows is not None:

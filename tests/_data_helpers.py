@@ -34,3 +34,34 @@ def r_table_cases(name: str) -> tuple[np.ndarray, np.ndarray]:
     X = pd.get_dummies(d[feats].astype(str), drop_first=True).astype(float).to_numpy()
     rep = d.c.to_numpy().astype(int)
     return np.repeat(X, rep, axis=0), np.repeat(d.y.to_numpy(), rep)
+
+
+def repeated_batches(n_batches: int = 6):
+    """A wrapper fitted on 180 labelled rows of breast cancer (a frozen logistic model of 150
+    other rows) and ``n_batches`` index arrays of 300 rows, 100 of class 1 and 200 of class 0,
+    each class drawn with replacement from a pool of 30 of the remaining rows (the mixture check
+    on repeated rows in memory, on Dask and on Spark: tests/test_mixture_check_repeats_dask.py,
+    tests/test_spark_mixture_check_repeats.py)."""
+    import warnings
+
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.frozen import FrozenEstimator
+    from sklearn.linear_model import LogisticRegression
+
+    from probwrap import PriorShiftWrapper
+
+    X, y = load_breast_cancer(return_X_y=True)
+    X = X[:, :5]
+    rng = np.random.default_rng(0)
+    idx = rng.permutation(y.size)
+    fit, lab, rest = idx[:150], idx[150:330], idx[330:]
+    frozen = FrozenEstimator(LogisticRegression(max_iter=5000).fit(X[fit], y[fit]))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        psw = PriorShiftWrapper(frozen, random_state=0).fit(X[lab], y[lab])
+    i1, i0 = rest[y[rest] == 1], rest[y[rest] == 0]
+    batches = []
+    for _ in range(n_batches):
+        p1, p0 = rng.choice(i1, 30, replace=False), rng.choice(i0, 30, replace=False)
+        batches.append(np.concatenate([rng.choice(p1, 100), rng.choice(p0, 200)]))
+    return X, psw, batches

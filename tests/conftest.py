@@ -68,6 +68,7 @@ XDIST_GROUPS = {
     "tests/test_spark_adapt_parity.py::": "spark",
     "tests/test_spark_repeats_monitor.py::": "spark",
     "tests/test_spark_batch_labels_missing.py::": "spark",
+    "tests/test_spark_mixture_check_repeats.py::": "spark",
 }
 
 

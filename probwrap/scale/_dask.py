@@ -533,13 +533,18 @@ def monitor_proba(est, source, seed, proba, w, fold_proba=None, counts=None, row
     chance), judged on the batch's rows as ``monitor`` judges a batch in memory; the client
     raises one :class:`~probwrap.shift.RepeatedRowsWarning` for the table. ``row_codes``:
     codes of the batch's features (:func:`batch_repeat_reference`), with ``counts`` read by
-    features too."""
-    from ..shift._repeats import repeats_of_rows
+    features too. The repeats are judged first, so that the batch's mixture check counts
+    them by their design effect (:func:`probwrap.shift._repeats.mixture_design_effect`), as
+    ``monitor`` in memory does (``prior_by_batch(repeat_design_effect=...)``; since session 30
+    of 5 December 2026: before, Dask and Spark batches counted repeated rows as independent)."""
+    from ..shift._repeats import mixture_design_effect, repeats_of_rows
 
     with _RECORDING, warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        row, unit = _monitor_row(est, source, seed, proba, w, fold_proba)
         repeats = repeats_of_rows(est, counts, proba, fold_proba, w, row_codes=row_codes)
+        deff = None if repeats is None else mixture_design_effect(repeats)
+        row, unit = _monitor_row(est, source, seed, proba, w, fold_proba,
+                                 repeat_design_effect=deff)
     return row, unit, [(c.category, str(c.message)) for c in caught], repeats
 
 
@@ -574,7 +579,7 @@ def warn_monitor_batches(per_batch: list, n_batches: int, *, stacklevel: int = 5
         )
 
 
-def _monitor_row(est, source, seed, proba, w, fold_proba=None):
+def _monitor_row(est, source, seed, proba, w, fold_proba=None, repeat_design_effect=None):
     from ._bootstrap import tally_prior_interval
     from ._tally import weight_unit_of
 
@@ -583,14 +588,16 @@ def _monitor_row(est, source, seed, proba, w, fold_proba=None):
         w = w / unit
 
     if source is None or source.n_replicates == 0 or est.n_resamples == 0:
-        res = est.estimate(proba, w, random_state=seed, fold_proba=fold_proba)
+        res = est.estimate(proba, w, random_state=seed, fold_proba=fold_proba,
+                           repeat_design_effect=repeat_design_effect)
         interval = res.interval
     else:
         import copy
 
         point = copy.copy(est)
         point.n_resamples = 0
-        res = point.estimate(proba, w, random_state=seed)
+        res = point.estimate(proba, w, random_state=seed,
+                             repeat_design_effect=repeat_design_effect)
         interval = tally_prior_interval(
             est, source, proba, w, None, res.prior, n_replicates=est.n_resamples, seed=seed
         )

@@ -57,7 +57,8 @@ class ClassMixtureMisfitWarning(UserWarning):
     selected on features, scores only").
 
     Rows that repeat one another beyond chance (``PriorShiftWrapper.adapt``, or ``monitor``
-    for a batch, raises :class:`~probwrap.shift.RepeatedRowsWarning`) are counted as their effective number over
+    for a batch, raises :class:`~probwrap.shift.RepeatedRowsWarning`; in memory, on Dask and
+    on Spark alike) are counted as their effective number over
     the repeats' design effect (``PriorEstimator.estimate(repeat_design_effect=...)``; since
     session 30 of 5 December 2026): before, the check took every repeated row as an
     independent draw and flagged 90 of 1,359 prior-shift batches drawn with replacement from
