@@ -177,18 +177,26 @@ def _row_identity_codes(X: Any) -> np.ndarray | None:
     :func:`probwrap._heldout._row_hashes`), as floats; None for other inputs (sparse matrices,
     object arrays, Dask or Spark rows), whose repeats are then judged by their posteriors
     alone."""
+    keys = _row_identity_keys(X)
+    if keys is None:
+        return None
+    return np.unique(keys, return_inverse=True)[1].ravel().astype(float)
+
+
+def _row_identity_keys(X: Any) -> np.ndarray | None:
+    """The 64-bit hashes behind :func:`_row_identity_codes` (equal where two rows agree in
+    every feature, the same for the labelled rows at ``fit`` and the rows judged), None for
+    other inputs."""
     from ._heldout import _row_hashes
 
     try:
         if hasattr(X, "iloc") and hasattr(X, "columns") and not _is_dask(X):
             import pandas as pd
 
-            keys = pd.util.hash_pandas_object(X, index=False).to_numpy()
-        elif isinstance(X, np.ndarray) and X.ndim == 2 and X.dtype.kind in "biuf":
-            keys = _row_hashes(X)
-        else:
-            return None
-        return np.unique(keys, return_inverse=True)[1].ravel().astype(float)
+            return pd.util.hash_pandas_object(X, index=False).to_numpy()
+        if isinstance(X, np.ndarray) and X.ndim == 2 and X.dtype.kind in "biuf":
+            return np.asarray(_row_hashes(X))
+        return None
     except (TypeError, ValueError):
         return None
 
@@ -738,6 +746,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         self._labelled_repeats = None  # (adapt's RepeatedRowsWarning)
         self._labelled_clumps = None
         self._labelled_row_reference = None
+        self._labelled_row_tally = None
         self._labelled_feature_keys = None  # (the per-draw cap's labelled_row_share)
         self._fold_share = None
         if _multiclass_dask(self.estimator, X, y, sample_weight):
@@ -924,6 +933,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             return None
         return _row_identity_codes(X)
 
+    def _unlabelled_row_keys(self, X: Any) -> np.ndarray | None:
+        """:func:`_row_identity_keys` of rows to judge, where the labelled rows' were tallied
+        at ``fit`` (None otherwise)."""
+        if getattr(self, "_labelled_row_tally", None) is None:
+            return None
+        return _row_identity_keys(X)
+
     def _repeat_counts(self, X: Any, est: PriorEstimator, n_folds: int,
                        table_labels: np.ndarray | None = None) -> tuple | None:
         """How often pairs of labelled rows (by their classes) have identical posteriors from
@@ -964,15 +980,19 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 return None
         # (and how the identical rows clump: the chance spread of the count of ties)
         self._labelled_clumps = labelled_clumps(proba, src[1], k)
-        row_codes = _row_identity_codes(X)
-        if row_codes is not None and table_labels is not None and n_folds:
-            row_codes = row_codes[table_labels >= 0] if (
-                row_codes.shape[0] == table_labels.shape[0]) else None
-        if row_codes is not None and row_codes.shape[0] == proba.shape[0]:
+        row_keys = _row_identity_keys(X)
+        if row_keys is not None and table_labels is not None and n_folds:
+            row_keys = row_keys[table_labels >= 0] if (
+                row_keys.shape[0] == table_labels.shape[0]) else None
+        if row_keys is not None and row_keys.shape[0] == proba.shape[0]:
+            row_codes = np.unique(row_keys, return_inverse=True)[1].ravel().astype(float)
             both = np.column_stack([
                 np.asarray(proba, dtype=float).reshape(proba.shape[0], -1), row_codes])
             self._labelled_row_reference = (*labelled_repeat_counts(both, src[1], k),
                                             *labelled_clumps(both, src[1], k))
+            # the labelled rows' distinct feature rows and how many rows each (the rate at
+            # which rows judged meet labelled rows: repeats_of_rows(labelled_keys=))
+            self._labelled_row_tally = np.unique(row_keys, return_counts=True)
         return labelled_repeat_counts(proba, src[1], k)
 
     def _refit_proba(self, rows: Any, X: Any) -> np.ndarray:
@@ -1386,7 +1406,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                     # rows in memory are grouped by their features as well (since 5 December 2026)
                     # the mixture check counts them by their design effect (session 30)
                     repeat_deff = self._warn_repeats(proba, folds, sample_weight,
-                                                     row_codes=self._unlabelled_row_codes(X))
+                                                     row_codes=self._unlabelled_row_codes(X),
+                                                     row_keys=self._unlabelled_row_keys(X))
                 share = self._labelled_row_share(X, sample_weight)
             poisson = est.n_resamples > 0 and (source is not None or target is not None) and not (
                 self.interval == "score" and not multiclass
@@ -1468,7 +1489,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         return mixture_design_effect(found)
 
     def _warn_repeats(self, proba: np.ndarray, folds: Any, sample_weight: Any,
-                      stacklevel: int = 3, row_codes: np.ndarray | None = None) -> float | None:
+                      stacklevel: int = 3, row_codes: np.ndarray | None = None,
+                      row_keys: np.ndarray | None = None) -> float | None:
         """Warn (:class:`~probwrap.shift.RepeatedRowsWarning`) when the unlabelled rows repeat
         one another far more often than independent draws of the labelled classes do; nothing
         where the labelled rows were not kept as rows.
@@ -1501,8 +1523,11 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if row_codes is None or reference is None or (
                 row_codes.shape[0] != np.asarray(proba).shape[0]):
             reference, row_codes = self._repeat_reference(), None
+        tally = getattr(self, "_labelled_row_tally", None) if row_codes is not None else None
         found = repeats_of_rows(self.prior_estimator_, reference, proba, folds,
-                                sample_weight, row_codes=row_codes)
+                                sample_weight, row_codes=row_codes,
+                                row_keys=None if tally is None else row_keys,
+                                labelled_keys=tally)
         if found is None:
             return None
         self._repeats_warning(found, row_codes is not None, stacklevel + 1)
@@ -1913,7 +1938,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             deff = None
             if cells is None:
                 repeats, deff = self._batch_repeats(proba, batches, batch_size, sample_weight,
-                                                    folds, self._unlabelled_row_codes(X))
+                                                    folds, self._unlabelled_row_codes(X),
+                                                    self._unlabelled_row_keys(X))
             table = prior_by_batch(
                 est, proba, batches, batch_size=batch_size, sample_weight=sample_weight,
                 fold_proba=folds, cells=cells, repeat_design_effect=deff,
@@ -1934,8 +1960,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                                       cells)
 
     def _batch_repeats(self, proba: np.ndarray, batches: Any, batch_size: Any,
-                       sample_weight: Any, folds: Any, row_codes: np.ndarray | None = None
-                       ) -> tuple[dict, np.ndarray | None]:
+                       sample_weight: Any, folds: Any, row_codes: np.ndarray | None = None,
+                       row_keys: np.ndarray | None = None) -> tuple[dict, np.ndarray | None]:
         """``monitor``'s judgement of every batch's repeats (rows in memory): ``({batch:
         (repeats_of_rows(...), by_features)}, design effect per row)``, each batch judged by
         the rule ``adapt`` applies to its rows (:func:`probwrap.shift._repeats.repeats_of_rows`;
@@ -1944,8 +1970,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         (the batch's mixture check reads it: ``prior_by_batch(repeat_design_effect=...)``; since
         session 30 of 5 December 2026). With ``row_codes`` (:func:`_row_identity_codes` of the
         rows) and the labelled rows' read at ``fit``, rows are identical only where their
-        features agree too, as in ``adapt``. ``({}, None)`` where the labelled rows were not
-        kept as rows. ``monitor`` warns (:class:`~probwrap.shift.RepeatedRowsWarning`) once,
+        features agree too, as in ``adapt``, and with ``row_keys`` (:func:`_row_identity_keys`)
+        a batch selected on its features is judged by how often its rows meet the labelled
+        rows too (:func:`probwrap.shift._repeats.selection_rate`). ``({}, None)`` where the
+        labelled rows were not kept as rows. ``monitor`` warns (:class:`~probwrap.shift.RepeatedRowsWarning`) once,
         naming the batches whose rows repeat beyond chance, after the table."""
         counts = self._repeat_reference(by_rows=True)
         if row_codes is None or counts is None or row_codes.shape[0] != proba.shape[0]:
@@ -1961,6 +1989,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             labels = np.asarray(batches)
             labels = labels.astype(str) if labels.dtype == object else labels
         w = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
+        # rows selected on their features (selection_rate): the labelled rows' feature rows
+        tally = getattr(self, "_labelled_row_tally", None)
+        if row_codes is None or row_keys is None or row_keys.shape[0] != n:
+            tally = None
         found: dict = {}
         deff = np.ones(n)
         for b in np.unique(labels):
@@ -1969,7 +2001,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 self.prior_estimator_, counts, proba[rows],
                 None if folds is None else [np.asarray(f)[rows] for f in folds],
                 None if w is None else w[rows],
-                row_codes=None if row_codes is None else row_codes[rows])
+                row_codes=None if row_codes is None else row_codes[rows],
+                row_keys=None if tally is None else row_keys[rows], labelled_keys=tally)
             found[b] = (judged, row_codes is not None)
             deff[rows] = mixture_design_effect(judged)
         return found, deff

@@ -25,7 +25,11 @@ weight of a group of identical rows), is well above it, ``PriorShiftWrapper.adap
 ``cells`` grouping the identical rows then count each group once. "Well above" allows for the
 chance spread of the count of tied pairs, which is large where a few values hold many rows
 (rounded or clipped scores): :func:`repeats_beyond_chance`, with how the labelled rows' identical
-posteriors clump (:func:`labelled_clumps`; since 5 December 2026).
+posteriors clump (:func:`labelled_clumps`; since 5 December 2026). Rows in memory selected on
+their features (the young, where the other features are coarse) coincide more often than any
+mix of the classes, in feature rows the labelled rows have: repeats held there are allowed up
+to the rate at least implied by how often the rows meet the labelled rows
+(:func:`selection_rate`; since 5 December 2026, session 30).
 
 Rows in memory (a DataFrame or a numeric array, labelled and unlabelled alike) are identical
 only where their features agree as well: ``PriorShiftWrapper`` passes codes of the rows'
@@ -67,6 +71,7 @@ __all__ = [
     "labelled_clumps",
     "labelled_repeat_counts",
     "repeats_beyond_chance",
+    "selection_rate",
     "REFERENCE_MODELS",
     "scored_by_other_models",
     "within_model_counts",
@@ -412,9 +417,80 @@ def excess_repeats(codes: np.ndarray, sample_weight: np.ndarray | None,
     return observed, float(1.0 + max(n - 1.0, 0.0) * max(rate, 0.0))
 
 
+def selection_rate(labelled_keys: tuple, keys: np.ndarray,
+                   sample_weight: np.ndarray | None = None) -> float | None:
+    """How often two independent draws of rows like these coincide at least, read from how
+    often they meet the labelled rows, for rows that may have been selected on their features;
+    None where no row meets a labelled row, no two labelled rows coincide (or the weights do
+    not sum to a positive finite number).
+
+    Rows drawn from any distribution ``g`` of feature rows coincide with probability ``sum_x
+    g(x)^2 >= (sum_x g(x) f(x))^2 / sum_x f(x)^2`` (Cauchy-Schwarz), ``f`` the labelled rows'
+    distribution, with equality where ``g`` is ``f``: rows selected on a feature that
+    concentrates them in feature rows common among the labelled rows (R's openintro acs12,
+    the young) meet the labelled rows more often than the labelled rows meet one another, and
+    coincide more often than any mix of the classes. Both sums are read without the rows'
+    own repeats: ``sum_x g f`` is the rate at which a row meets a labelled row (pairs of a row
+    and a labelled row with the same features over ``n m``, each row by its weight), which a
+    row drawn twice from a pool leaves as it is, and ``sum_x f^2`` the labelled rows' own rate
+    of tied pairs. A lower bound, so it never allows more coincidences than distinct rows
+    give; rows selected on a feature independent of the rest (every feature row's share
+    scaled alike) meet the labelled rows no more often and are not covered (carData Arrests,
+    docs/evidence/prior_shift_log.md, "Repeat check on batches selected on a feature").
+
+    ``labelled_keys``: ``(distinct keys, rows of each)`` of the labelled rows' features
+    (``numpy.unique(keys, return_counts=True)``), ``keys``: the rows' (equal where the
+    features agree; the same hash as the labelled rows').
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> per = np.array([2] * 5 + [8] * 5)                  # 50 labelled rows, 10 feature rows
+    >>> labelled = (np.arange(10), per)
+    >>> round(selection_rate(labelled, np.repeat(np.arange(10), per)), 4)  # as the labelled
+    0.1562
+    >>> round(selection_rate(labelled, np.arange(5, 10)), 4)  # the common half alone
+    0.2162
+    """
+    ref, per = (np.asarray(a) for a in labelled_keys)
+    k = np.asarray(keys)
+    if ref.shape[0] == 0 or k.shape[0] == 0:
+        return None
+    w = np.ones(k.shape[0]) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    total, m = float(w.sum()), float(per.sum())
+    if not (np.isfinite(total) and total > 0 and m > 1):
+        return None
+    own = float(np.sum(per * (per - 1.0)) / (m * (m - 1.0)))
+    at = np.minimum(np.searchsorted(ref, k), ref.shape[0] - 1)
+    seen = ref[at] == k
+    if own <= 0 or not seen.any():
+        return None
+    meet = float(np.dot(w, np.where(seen, per[at], 0)) / (total * m))
+    return float(min(meet * meet / own, 1.0))
+
+
+def _seen_excess(labelled: np.ndarray, keys: np.ndarray, codes: np.ndarray,
+                 sample_weight: np.ndarray | None) -> float:
+    """The part of the rows' design effect of their repeats, less 1, held by groups of
+    identical rows whose features some labelled row has: ``(sum_{g seen} W_g^2 - sum_{i seen}
+    w_i^2) / sum_i w_i^2``."""
+    ref = np.asarray(labelled)
+    k = np.asarray(keys)
+    w = np.ones(k.shape[0]) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    at = np.minimum(np.searchsorted(ref, k), max(ref.shape[0] - 1, 0))
+    seen = (ref[at] == k) if ref.shape[0] else np.zeros(k.shape[0], dtype=bool)
+    group = np.bincount(codes, weights=w)
+    in_seen = np.bincount(codes, weights=seen.astype(float)) > 0
+    sq = float(np.dot(w, w))
+    return float(max(np.dot(group[in_seen], group[in_seen]) - np.dot(w[seen], w[seen]), 0.0)
+                 / sq) if sq > 0 else 0.0
+
+
 def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_proba=None,
                     sample_weight: np.ndarray | None = None, *,
-                    row_codes: np.ndarray | None = None) -> tuple[int, int, float, float] | None:
+                    row_codes: np.ndarray | None = None, row_keys: np.ndarray | None = None,
+                    labelled_keys: tuple | None = None
+                    ) -> tuple[int, int, float, float] | None:
     """The check behind :class:`RepeatedRowsWarning` on one set of unlabelled rows: ``(rows,
     distinct rows, observed design effect, the largest one independent draws give)`` where the
     rows repeat one another beyond chance (:func:`repeats_beyond_chance`), None otherwise.
@@ -431,7 +507,11 @@ def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_pro
     one more block in which identical rows agree, with ``counts`` read from the labelled rows
     grouped alike (``PriorShiftWrapper._repeat_reference(by_rows=True)``).
     The shares of the mix are the source's and the rows' maximum-likelihood estimate (the rate
-    of coincidences differs by class; the larger of the two is taken).
+    of coincidences differs by class; the larger of the two is taken). ``row_keys``: the
+    rows' feature hashes, with ``labelled_keys`` the labelled rows' distinct ones and their
+    counts: rows selected on their features coincide more often than any mix of the classes,
+    in feature rows the labelled rows have (:func:`selection_rate`; since 5 December 2026,
+    session 30; rows in memory).
 
     Examples
     --------
@@ -460,8 +540,14 @@ def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_pro
     del m
     if int(codes.max()) + 1 == codes.shape[0]:
         return None  # no row repeats
+    selected = None
+    if row_keys is not None and labelled_keys is not None and (
+            np.asarray(row_keys).shape[0] == p.shape[0]):
+        rate = selection_rate(labelled_keys, row_keys, sample_weight)
+        if rate is not None:
+            selected = (rate, _seen_excess(labelled_keys[0], row_keys, codes, sample_weight))
     return judge_repeats(estimator, counts, ml_shares(estimator, p, sample_weight),
-                         repeat_tallies(codes, sample_weight))
+                         repeat_tallies(codes, sample_weight), selected=selected)
 
 
 def ml_shares(estimator, proba: np.ndarray, sample_weight: np.ndarray | None) -> np.ndarray:
@@ -554,14 +640,18 @@ def key_tallies(keys: np.ndarray, group_weight: np.ndarray) -> tuple[int, float]
     return int(k.shape[0]), float(np.dot(w, w))
 
 
-def judge_repeats(estimator, counts: tuple | None, ml: np.ndarray,
-                  tallies: tuple) -> tuple[int, int, float, float] | None:
+def judge_repeats(estimator, counts: tuple | None, ml: np.ndarray, tallies: tuple,
+                  selected: tuple[float, float] | None = None
+                  ) -> tuple[int, int, float, float] | None:
     """The rule of :func:`repeats_of_rows` on rows already grouped: ``tallies`` =
     :func:`repeat_tallies` (or their sums over shares of the keys, Dask and Spark), ``ml`` the
     rows' maximum-likelihood shares (:func:`ml_shares`; of a tally's binned rows beyond 20,000
     Dask or Spark rows). ``(rows, distinct rows, observed design effect, the largest one
     independent draws give)`` where the rows repeat beyond chance, None otherwise (and where
-    the sums are not finite: weights beyond about 1e+-150)."""
+    the sums are not finite: weights beyond about 1e+-150). ``selected``: ``(rate of
+    :func:`selection_rate`, the part of the observed design effect less 1 held by feature rows
+    some labelled row has)``: where the rate is larger than the classes' mix gives, the
+    expected design effect grows by ``(n - 1)`` times the difference, at most that part."""
     rows, groups, group_sq, total, sq = tallies
     if counts is None or getattr(estimator, "n_resamples", 0) == 0 or rows < 2:
         return None
@@ -578,6 +668,18 @@ def judge_repeats(estimator, counts: tuple | None, ml: np.ndarray,
         # the larger spread of the two mixes (how far the count of ties swings by chance)
         sums = [_clump_sums(counts[2:4], sh) for sh in (estimator.source_prior_, ml)]
         clump = max(sums, key=lambda qs: qs[1] - qs[0] ** 2)
+    if selected is not None and selected[0] > rate:
+        # rows selected on their features coincide more often than any mix of the classes
+        # (selection_rate), but only in feature rows the labelled rows have: the excess
+        # allowed is at most the repeats held there (ties among feature rows no labelled row
+        # has, which a pool drawn with replacement gives, are judged as before); the clumps'
+        # third sum grown as by a selection concentrating f by a factor W (sum g^2 = W sum
+        # f^2, sum g^3 = W^2 sum f^3)
+        allow = min(float(selected[1]), max(n - 1.0, 0.0) * (float(selected[0]) - rate))
+        expected += allow
+        grown = (expected - 1.0) / max(n - 1.0, 1.0)
+        if clump is not None and clump[0] > 0 and grown > clump[0]:
+            clump = (grown, clump[1] * (grown / clump[0]) ** 2)
     if not _beyond_chance(observed, expected, n, clump):
         return None
     return int(rows), int(groups), observed, expected
