@@ -1,0 +1,106 @@
+"""How often ``RepeatedRowsWarning`` fires on batches of distinct records and on batches that
+truly repeat rows, on bundled sets with coarse features.
+
+Each seed fits gradient boosting on 40 % of the rows, wraps it frozen in ``PriorShiftWrapper``
+fitted on the next 30 % and adapts to batches of the last 30 % (the loader of
+``benchmarks/feature_selected_batches.py``; no download at run time):
+
+* *feature*: distinct rows above the 50th or 70th, or below the 30th or 15th percentile of each
+  of the three columns with the most distinct values (at most 400 rows);
+* *prior*: distinct rows at a class share from U(0.15, 0.85) (a batch shrinks where a class's
+  pool is short);
+* *repeat*: 300 rows drawn with replacement from 150 rows of a prior batch, or 200 from 100
+  rows of a feature batch of at least 100 rows: every batch truly repeats rows (design effect
+  about 3).
+
+``--old`` judges without :func:`probwrap.shift._repeats.selection_rate` (the rule before it).
+Measured in docs/evidence/prior_shift_log.md, "Repeat check on batches selected on a feature".
+
+    nice python benchmarks/repeat_check_selected_rows.py --seeds 6     # ~2 min
+    nice python benchmarks/repeat_check_selected_rows.py --seeds 6 --old
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from sklearn.ensemble import HistGradientBoostingClassifier
+from sklearn.frozen import FrozenEstimator
+
+sys.path.insert(0, str(Path(__file__).parent))
+from feature_selected_batches import load  # noqa: E402
+
+import probwrap.shift._repeats as _rep  # noqa: E402
+from probwrap import PriorShiftWrapper  # noqa: E402
+from probwrap.shift import RepeatedRowsWarning  # noqa: E402
+
+SETS = ("Arrests", "acs12", "Pima", "Mroz", "star98", "HealthInsurance", "breast_cancer")
+
+
+def batches(X: pd.DataFrame, y: np.ndarray, rest: np.ndarray, rng, n_prior: int) -> list:
+    out = []
+    num = [c for c in X.columns if X[c].nunique() > 10]
+    for c in sorted(num, key=lambda c: -X[c].nunique())[:3]:
+        v = X[c].to_numpy()
+        for side, q in (("gt", 50), ("gt", 70), ("lt", 30), ("lt", 15)):
+            cut = np.nanpercentile(v, q)
+            sel = rest[(v[rest] > cut) if side == "gt" else (v[rest] < cut)]
+            if sel.size >= 40:
+                b = rng.choice(sel, min(sel.size, 400), replace=False)
+                out.append(("feature", b))
+                if b.size >= 100:
+                    out.append(("repeat-feature", rng.choice(b[:100], 200, replace=True)))
+    i1, i0 = rest[y[rest] == 1], rest[y[rest] == 0]
+    for _ in range(n_prior):
+        n = int(rng.integers(250, 401))
+        k1 = min(int(rng.binomial(n, rng.uniform(0.15, 0.85))), i1.size)
+        b = np.concatenate([rng.choice(i1, k1, replace=False),
+                            rng.choice(i0, min(n - k1, i0.size), replace=False)])
+        out.append(("prior", b))
+        pool = rng.choice(b, min(150, b.size), replace=False)
+        out.append(("repeat-prior", rng.choice(pool, 300, replace=True)))
+    return out
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--seeds", type=int, default=3)
+    ap.add_argument("--prior-batches", type=int, default=8)
+    ap.add_argument("--sets", default=",".join(SETS))
+    ap.add_argument("--old", action="store_true")
+    ap.add_argument("--seed-base", type=int, default=5000)
+    a = ap.parse_args()
+    if a.old:
+        _rep.selection_rate = lambda *args, **kw: None
+    rows = []
+    for name in a.sets.split(","):
+        X, y = load(name)
+        X = X.fillna(X.median())
+        for seed in range(a.seeds):
+            rng = np.random.default_rng(a.seed_base + seed)
+            idx = rng.permutation(y.size)
+            tr, lab, rest = np.split(idx, [int(0.4 * y.size), int(0.7 * y.size)])
+            model = HistGradientBoostingClassifier(max_iter=100, random_state=seed)
+            model.fit(X.iloc[tr], y[tr])
+            wrapper = PriorShiftWrapper(FrozenEstimator(model), random_state=seed)
+            wrapper.fit(X.iloc[lab], y[lab])
+            for kind, b in batches(X, y, rest, rng, a.prior_batches):
+                with warnings.catch_warnings(record=True) as rec:
+                    warnings.simplefilter("always")
+                    wrapper.adapt(X.iloc[b])
+                rows.append(dict(set=name, seed=seed, kind=kind,
+                                 rep=any(r.category is RepeatedRowsWarning for r in rec)))
+    d = pd.DataFrame(rows)
+    t = d.groupby(["set", "kind"]).rep.agg(["sum", "count"]).unstack("kind")
+    pd.set_option("display.width", 200)
+    print(t)
+    print(d.groupby("kind").rep.agg(["sum", "count"]))
+
+
+if __name__ == "__main__":
+    main()
