@@ -40,6 +40,7 @@ from ._validation import (
     power_of_two_unit,
 )
 from .decision import (
+    PlugInCostAboveOneActionWarning,
     apply_class_offsets,
     budget_actions,
     check_capacity,
@@ -556,7 +557,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
             f"{se * unit:.3g}): the "
             "model's probabilities do not fit these rows. Use strategy='tuned', or wrap a "
             "CalibrationWrapper: CostPolicyWrapper(CalibrationWrapper(model), ...).",
-            UserWarning,
+            PlugInCostAboveOneActionWarning,
             stacklevel=3,
         )
 

@@ -18,6 +18,7 @@ from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 
 from probwrap import CostPolicyWrapper
+from probwrap.decision import PlugInCostAboveOneActionWarning
 
 TEXT = "plug-in rule"
 
@@ -26,7 +27,12 @@ def _fit(est, X, y, **kw):
     with warnings.catch_warnings(record=True) as ws:
         warnings.simplefilter("always")
         pol = est.fit(X, y, **kw)
-    return pol, [str(w.message) for w in ws if TEXT in str(w.message)]
+    said = [w for w in ws if TEXT in str(w.message)]
+    # the check's warning has its own class (a UserWarning, so filters on UserWarning still
+    # catch it), and no other warning of that class is raised
+    assert all(w.category is PlugInCostAboveOneActionWarning for w in said)
+    assert [w for w in ws if issubclass(w.category, PlugInCostAboveOneActionWarning)] == said
+    return pol, [str(w.message) for w in said]
 
 
 def _constant_model(p_positive: float) -> FrozenEstimator:
@@ -50,6 +56,15 @@ def test_overconfident_constant_model_warns_with_the_paired_numbers():
     assert f"difference 0.6 +- {se:.3g}" in msg[0]
     assert pol.heldout_cost_ == pytest.approx(0.8)  # the fitted rule is unchanged: a warning only
     assert np.all(pol.predict(X) == 1)
+
+
+def test_the_class_can_be_filtered_on_its_own():
+    X, y = np.zeros((50, 1)), np.r_[np.zeros(40), np.ones(10)].astype(int)
+    assert issubclass(PlugInCostAboveOneActionWarning, UserWarning)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", PlugInCostAboveOneActionWarning)
+        with pytest.raises(PlugInCostAboveOneActionWarning, match="costs 0.8 a row"):
+            CostPolicyWrapper(_constant_model(0.9), costs={"fp": 1, "fn": 1}).fit(X, y)
 
 
 def test_relative_weights_and_counts_read_as_the_rows_they_stand_for():

@@ -38,6 +38,7 @@ from ._offsets import (
     class_offset_curve,
     tune_class_offsets,
 )
+from ._plugin_check import PlugInCostAboveOneActionWarning
 from ._scorer import make_cost_scorer, realised_cost
 from ._settle import SettledCutoff, SettledOffsets, settle_class_offsets, settle_cutoff
 
@@ -53,6 +54,7 @@ __all__ = [
     "GuaranteedCutoff",
     "GuaranteedOffsets",
     "OffsetCurve",
+    "PlugInCostAboveOneActionWarning",
     "SettledCutoff",
     "SettledOffsets",
     "action_savings",
