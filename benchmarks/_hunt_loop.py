@@ -34,7 +34,8 @@ are here. A new hunt, from its benchmarks/ script::
 
 ``run_cells(..., variants=f)`` runs a cell once per keyword set ``f(task, mode, n_cal)``
 gives (e.g. weight kinds), ``keep_size`` / ``keep_model`` skip sizes / models. Tallies:
-``geo_mean``, ``warned``, ``warning_names``, ``cost_rows``.
+``geo_mean``, ``warned``, ``warning_names``, ``cost_rows``; ``fit_listing_warnings`` fits and lists
+the warnings (probwrap's marked ``*``, plain-class warnings raised from probwrap included).
 
 Prior-shift hunts: ``run_sets(sets(), seeds, models, cell, crashes, picked=picked_by(names))``
 calls ``cell(name, X, y, model, seed)`` for every set, seed and model and keeps the script's own
@@ -44,9 +45,11 @@ crashes (``shift_real_hunt24.saver`` writes the rows after every set).
 from __future__ import annotations
 
 import argparse
+import sys
 import time
 import warnings
 from collections.abc import Callable, Iterable
+from contextlib import contextmanager
 
 import numpy as np
 import pandas as pd
@@ -216,8 +219,63 @@ def geo_mean(r: pd.Series) -> float:
     return float(np.exp(np.log(r).mean())) if len(r) else np.nan
 
 
+@contextmanager
+def warnings_by_origin():
+    """Record every warning, with the module that raised it.
+
+    Yields ``(records, origin)``: ``records`` as ``warnings.catch_warnings(record=True)`` keeps
+    them (filter ``"always"``), ``origin(record)`` the name of the module whose code called
+    ``warnings.warn`` for it ("" if unknown: raised from C, or before the block). A warning
+    raised with ``stacklevel`` carries the caller's file, not the raiser's, so a plain
+    ``UserWarning`` from probwrap cannot be told from the file path; ``warnings.warn`` is
+    wrapped for the block to note its caller (keyed by class and text, so a warning probwrap
+    caught and raised again with ``warn_explicit`` keeps the module that first raised it).
+    """
+    seen: dict[tuple[type, str], str] = {}
+    real = warnings.warn
+
+    def warn(message, category=None, stacklevel=1, source=None, **kw):
+        cat = type(message) if isinstance(message, Warning) else (category or UserWarning)
+        seen.setdefault((cat, str(message)), sys._getframe(1).f_globals.get("__name__", ""))
+        return real(message, category, stacklevel + 1, source, **kw)
+
+    with warnings.catch_warnings(record=True) as ws:
+        warnings.simplefilter("always")
+        warnings.warn = warn
+        try:
+            yield ws, lambda x: seen.get((x.category, str(x.message)), "")
+        finally:
+            warnings.warn = real
+
+
+def probwrap_warning(x, origin: str = "") -> bool:
+    """A recorded warning is probwrap's: a probwrap class, raised from probwrap's code
+    (``origin``, from :func:`warnings_by_origin`), or its file in a ``probwrap`` folder."""
+    return (getattr(x.category, "__module__", "").startswith("probwrap")
+            or origin == "probwrap" or origin.startswith("probwrap.")
+            or "probwrap" in str(x.filename))
+
+
+def fit_listing_warnings(est, X, y, w, caught: list):
+    """Fit ``est`` (with ``sample_weight=w`` unless None) keeping every warning but
+    deprecations; ``caught`` gets their sorted distinct class names, probwrap's marked ``*``
+    (:func:`probwrap_warning`: plain-class warnings raised from probwrap count too)."""
+    with warnings_by_origin() as (ws, origin):
+        if w is None:
+            est.fit(X, y)
+        else:
+            est.fit(X, y, sample_weight=w)
+    for x in ws:
+        if issubclass(x.category, DeprecationWarning):
+            continue
+        caught.append(("*" if probwrap_warning(x, origin(x)) else "") + x.category.__name__)
+    caught[:] = sorted(set(caught))
+    return est
+
+
 def warned(s) -> bool:
-    """A cell's warning list names one of probwrap's warnings (marked ``*``)."""
+    """A cell's warning list names one of probwrap's warnings (marked ``*`` by
+    :func:`fit_listing_warnings`)."""
     return isinstance(s, str) and "*" in s
 
 

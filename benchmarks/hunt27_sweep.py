@@ -202,21 +202,10 @@ def models() -> dict:
 
 
 def _fit(est, X, y, w, caught: list):
-    """Fit with every warning kept; ``caught`` gets the class names, probwrap's marked with ``*``."""
-    with warnings.catch_warnings(record=True) as ws:
-        warnings.simplefilter("always")
-        if w is None:
-            est.fit(X, y)
-        else:
-            est.fit(X, y, sample_weight=w)
-    for x in ws:
-        if issubclass(x.category, DeprecationWarning):
-            continue
-        mod = getattr(x.category, "__module__", "")
-        mark = "*" if mod.startswith("probwrap") or "probwrap" in str(x.filename) else ""
-        caught.append(mark + x.category.__name__)
-    caught[:] = sorted(set(caught))
-    return est
+    """Fit with every warning kept; ``caught`` gets the class names, probwrap's marked with ``*``
+    (``_hunt_loop.fit_listing_warnings``: since session 30 by where a warning was raised too,
+    so plain-class warnings from probwrap count)."""
+    return L.fit_listing_warnings(est, X, y, w, caught)
 
 
 _warned = L.warned
