@@ -73,6 +73,10 @@ PLATT_ANCHOR_MAX_ROWS = 300
 #: regression, a miss costing 10) the Platt map moved the anchor from 0.091 to 0.017 and the
 #: test cost 1.54x the plug-in cutoff's (benchmarks/cost_newer_sets.py --quick).
 PLATT_ANCHOR_MIN_CLASS_ROWS = 10
+#: The bound as :func:`_platt_over_identity` reads it where Platt scored the lower log loss; a
+#: benchmark sets it to 5 for the rule "Platt's lower score counts from ``FEW_CLASS_ROWS`` rows"
+#: (benchmarks/tuned_cost_few_rare_rows.py, session 30: not better, so not the default).
+_PLATT_SCORED_LOWER_MIN_CLASS_ROWS = PLATT_ANCHOR_MIN_CLASS_ROWS
 
 #: Session 26: on at most ``PLATT_ANCHOR_MAX_ROWS`` held-out rows with at least this many of each
 #: class (``FEW_CLASS_ROWS``, Cochran 1954, below which the tuned fit already warns), the anchor
@@ -357,7 +361,7 @@ def _platt_over_identity(cw: Any, p, y, w, t0: float, *, crossfit: bool = False)
     fewest = np.bincount(np.asarray(y, dtype=np.intp), weights=counted, minlength=2).min()
     scores = cw.method_scores_
     scored_lower = (
-        fewest >= PLATT_ANCHOR_MIN_CLASS_ROWS
+        fewest >= _PLATT_SCORED_LOWER_MIN_CLASS_ROWS
         and "platt" in scores and "identity" in scores and "platt" not in cw.method_notes_
         and scores["platt"][0] < scores["identity"][0]
     )  # (not scored, or not eligible: a fit at a boundary of its parameters)
