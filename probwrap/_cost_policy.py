@@ -94,8 +94,8 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
     strategy : {"bayes", "tuned", "fixed"}, default="bayes"
         ``"bayes"``: the plug-in rule, argmin over actions of ``sum_k p_k C[k, a]`` (binary: act
         when ``p > (c_fp - c_tn) / ((c_fp - c_tn) + (c_fn - c_tp))``, Elkan 2001; with a
-        ``FrozenEstimator``, a warning says when the rows given to :meth:`fit` show that rule to
-        cost more than one action for every row).
+        ``FrozenEstimator``, ``PlugInCostAboveOneActionWarning`` says when the rows given to
+        :meth:`fit` show that rule to cost more than one action for every row).
         ``"tuned"``: binary with constant costs, the cutoff on ``p`` with the least cost on the
         out-of-fold predictions of all folds pooled (an exact search over every distinct held-out
         probability), settled toward the plug-in cutoff where the held-out rows do not show it
