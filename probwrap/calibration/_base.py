@@ -41,6 +41,15 @@ class WeightScaleWarning(UserWarning):
     number of rows, a Venn-Abers test point of weight one) when ``sample_weight`` cannot be row
     frequencies because it sums to less than the number of rows it weights. The weights are
     then rescaled to sum to Kish's effective sample size (see :func:`count_weights`).
+
+    Also raised where unequal whole-number weights share a factor above 1 and a step counts
+    rows (they are read as relative weights, by Kish's size); where a reliability diagram's
+    Wilson intervals or consistency bands (the plot's and the report's) read unequal weights
+    that are not all whole numbers, or whole numbers sharing a factor, as relative (since
+    5 December 2026); and where weights averaging below 1e-6 per row reach a model fitted inside
+    a wrapper, which receives them as given (since 5 December 2026; the message names the
+    model: scikit-learn's ``LogisticRegression`` and ``GaussianNB`` read that scale). Rescale
+    such weights to sum to the number of rows, ``w * len(w) / w.sum()`` (docs/weights.md).
     """
 
 
@@ -91,7 +100,7 @@ class UnverifiedSharpeningWarning(UserWarning):
     targets regularise the slope).
 
     Also raised for a temperature above 1 (softening) on such rows when their scores misrank at
-    most 5 % of the pairs (session 30): on separated rows where the fit stops is set by its
+    most 5 % of the pairs (since 5 December 2026): on separated rows where the fit stops is set by its
     prior, not by the rows, and naive Bayes or boosting log-odds are so wide that a softened
     map still leaves rows far more confident than the rows can check (``nsw74psidA``, 30 rows:
     temperatures of 3-8, 1.15-1.43 times the sigmoid's test log loss).

@@ -60,7 +60,7 @@ class ClassMixtureMisfitWarning(UserWarning):
     for a batch, raises :class:`~probwrap.shift.RepeatedRowsWarning`; in memory, on Dask and
     on Spark alike) are counted as their effective number over
     the repeats' design effect (``PriorEstimator.estimate(repeat_design_effect=...)``; since
-    session 30 of 5 December 2026): before, the check took every repeated row as an
+    5 December 2026): before, the check took every repeated row as an
     independent draw and flagged 90 of 1,359 prior-shift batches drawn with replacement from
     short pools on seven bundled sets at its 1 % level, after 6
     (``benchmarks/mixture_check_repeated_rows.py``).

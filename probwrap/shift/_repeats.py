@@ -117,6 +117,15 @@ class RepeatedRowsWarning(UserWarning):
     cell (``adapt(X, cells=...)``; for a NumPy array, ``numpy.unique(X, axis=0,
     return_inverse=True)[1]``). The estimate, the interval and the test are not changed by the
     warning; passing ``cells`` (any) turns the check off.
+
+    Distinct records selected on a feature can coincide more often than any mix of the labelled
+    classes where the features are coarse; since 5 December 2026 the rows in memory are allowed
+    the excess that their rate of meeting the labelled rows' feature rows implies
+    (:func:`selection_rate`), so such batches warn less often, but not never: a selection that
+    thins every feature row alike cannot be told from rows drawn with replacement (batches of
+    distinct records cut on a feature, seven bundled sets: 24 of 311 warned before, 13 after;
+    ``benchmarks/repeat_check_selected_rows.py``, docs/evidence/prior_shift_log.md, "Repeat
+    check on batches selected on a feature"). Check such a batch with ``feature_check_rows=``.
     """
 
 
