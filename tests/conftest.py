@@ -121,6 +121,21 @@ def _modules_from_source_tree():
     return found
 
 
+def pytest_configure(config):
+    # The library's modules are imported before collection. Under --import-mode=importlib a
+    # module collected for its doctests is executed afresh from its file unless it is already in
+    # sys.modules, and `import probwrap` loads the wrappers only on first use (PEP 562): a run
+    # that collected probwrap/shift/_repeats.py's doctests before any test imported it held two
+    # copies of that module, and the RepeatedRowsWarning the wrapper raised (from the copy its
+    # function-level import found) was not the class the test had imported. The README's run
+    # collects tests/ first, so only runs naming a module before the tests met it.
+    import probwrap.calibration  # noqa: F401
+    import probwrap.decision  # noqa: F401
+    import probwrap.metrics  # noqa: F401
+    import probwrap.shift  # noqa: F401
+    from probwrap import CalibrationWrapper, CostPolicyWrapper, PriorShiftWrapper  # noqa: F401
+
+
 def _in_xdist_worker(config) -> bool:
     return hasattr(config, "workerinput")
 
