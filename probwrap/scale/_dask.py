@@ -486,30 +486,37 @@ def _monitor_block(shared, seed, Xb, wb):
         return None
     proba = predict_block(estimator, "predict_proba", Xb, est.n_classes_)
     fold_proba = None if folds is None else list(folds.fold_proba(Xb))
-    counts, codes = batch_repeat_reference(counts, Xb)
+    counts, codes, selected = batch_repeat_reference(counts, Xb)
     return monitor_proba(est, source, seed, proba, check_sample_weight(wb, proba.shape[0]),
-                         fold_proba, counts, codes)
+                         fold_proba, counts, codes, selected)
 
 
 def batch_repeat_reference(counts: Any, Xb: Any) -> tuple:
-    """``(labelled repeat counts, feature codes of the batch's rows or None)`` for one
-    ``monitor`` batch on a worker or executor: ``counts`` is ``(counts by features and
-    posteriors or None, counts by posteriors or None)``
-    (``PriorShiftWrapper._repeat_reference(by_rows=True)`` and ``()``); with the first, the
-    batch's rows are grouped by their features too, as in memory (since 5 December 2026,
-    session 25; before, by their posteriors alone)."""
-    from ..shift._repeats import row_key_pairs
+    """``(labelled repeat counts, feature codes of the batch's rows or None, (the rows'
+    feature hashes, the labelled rows' tally) or None)`` for one ``monitor`` batch on a worker
+    or executor: ``counts`` is ``(counts by features and posteriors or None, counts by
+    posteriors or None[, the labelled rows' distinct feature hashes and rows of each])``
+    (``PriorShiftWrapper._repeat_reference(by_rows=True)``, ``()`` and
+    ``_labelled_row_tally``); with the first, the batch's rows are grouped by their features
+    too, as in memory (since 5 December 2026, session 25; before, by their posteriors alone),
+    and with the third a batch selected on its features is judged by how often its rows meet
+    the labelled rows (:func:`probwrap.shift._repeats.selection_rate`), the hashes read here as
+    in memory (:func:`probwrap.shift._repeats.identity_row_keys`; since session 30 of 5
+    December 2026)."""
+    from ..shift._repeats import identity_row_keys, row_key_pairs
 
     if counts is None:
-        return None, None
-    by_rows, plain_counts = counts
+        return None, None, None
+    by_rows, plain_counts = counts[:2]
+    tally = counts[2] if len(counts) > 2 else None
     if by_rows is not None:
         keys = row_key_pairs(Xb)
         if keys is not None:
             codes = np.unique(np.ascontiguousarray(keys).view(np.dtype((np.void, 16))).ravel(),
                               return_inverse=True)[1].ravel().astype(float)
-            return by_rows, codes
-    return plain_counts, None
+            hashes = None if tally is None else identity_row_keys(Xb)
+            return by_rows, codes, (None if hashes is None else (hashes, tally))
+    return plain_counts, None, None
 
 
 #: One batch's estimate at a time per process records its warnings (``warnings.catch_warnings``
@@ -517,7 +524,8 @@ def batch_repeat_reference(counts: Any, Xb: Any) -> tuple:
 _RECORDING = threading.Lock()
 
 
-def monitor_proba(est, source, seed, proba, w, fold_proba=None, counts=None, row_codes=None):
+def monitor_proba(est, source, seed, proba, w, fold_proba=None, counts=None, row_codes=None,
+                  selected=None):
     """One row of a monitor table from a batch's probabilities and weights (Dask or Spark),
     the power of two the batch's weights were divided by (1.0 unless they lie beyond about
     1e+-77, whose sums of squares would overflow or underflow; a batch's estimate does not
@@ -536,12 +544,17 @@ def monitor_proba(est, source, seed, proba, w, fold_proba=None, counts=None, row
     features too. The repeats are judged first, so that the batch's mixture check counts
     them by their design effect (:func:`probwrap.shift._repeats.mixture_design_effect`), as
     ``monitor`` in memory does (``prior_by_batch(repeat_design_effect=...)``; since session 30
-    of 5 December 2026: before, Dask and Spark batches counted repeated rows as independent)."""
+    of 5 December 2026: before, Dask and Spark batches counted repeated rows as independent).
+    ``selected``: ``(the rows' feature hashes, the labelled rows' tally)`` of
+    :func:`batch_repeat_reference`, the rule for batches selected on a feature, as in memory
+    (``repeats_of_rows(row_keys=, labelled_keys=)``)."""
     from ..shift._repeats import mixture_design_effect, repeats_of_rows
 
+    row_keys, tally = (None, None) if selected is None else selected
     with _RECORDING, warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        repeats = repeats_of_rows(est, counts, proba, fold_proba, w, row_codes=row_codes)
+        repeats = repeats_of_rows(est, counts, proba, fold_proba, w, row_codes=row_codes,
+                                  row_keys=row_keys, labelled_keys=tally)
         deff = None if repeats is None else mixture_design_effect(repeats)
         row, unit = _monitor_row(est, source, seed, proba, w, fold_proba,
                                  repeat_design_effect=deff)
@@ -648,7 +661,8 @@ def monitor_dask(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weigh
     # with every block's task (a refit base model brings its fold models along)
     shared = dask.delayed(
         (owner.estimator_, est, source, owner._fold_scorer(),
-         (owner._repeat_reference(by_rows=True), owner._repeat_reference())),
+         (owner._repeat_reference(by_rows=True), owner._repeat_reference(),
+          getattr(owner, "_labelled_row_tally", None))),
         pure=True, traverse=False,
     )
     call = dask.delayed(_monitor_block, pure=True)

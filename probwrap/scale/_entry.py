@@ -67,17 +67,21 @@ def unlabelled_proba_from_dask(estimator: Any, X: Any, sample_weight: Any = None
 
 def unlabelled_repeat_tallies(X: Any, sample_weight: Any, estimator: Any, scorer: Any,
                               n_classes: int, by_features: bool,
-                              n_rows: int | None = None) -> tuple:
+                              n_rows: int | None = None, tally: Any = None) -> tuple:
     """:func:`probwrap.shift._repeats.repeat_tallies` of unlabelled Dask or Spark rows, grouped
     where they live by their features (``by_features``) or by the posteriors of ``estimator``
     (and of ``scorer``'s fold models, a base model refit on the labelled rows): five numbers
-    come back, whatever the number of rows (:mod:`probwrap.scale._repeat_keys`)."""
+    come back, whatever the number of rows (:mod:`probwrap.scale._repeat_keys`), and three
+    more sums where ``tally`` (the labelled rows' distinct feature hashes and rows of each)
+    is given with ``by_features``: how often the rows meet the labelled rows
+    (:func:`probwrap.shift._repeats.selection_from_sums`)."""
     from ._repeat_keys import key_block
 
     rows = rows_of(X, None, sample_weight, estimator)
     return rows.key_tallies(key_block, rows.shared(estimator),
                             None if scorer is None else rows.shared(scorer), int(n_classes),
-                            bool(by_features), n_rows=n_rows)
+                            bool(by_features), tally if by_features else None,
+                            n_rows=n_rows)
 
 
 def spark_cells_rows(estimator: Any, X: Any, sample_weight: Any, cells: str, folds: Any,

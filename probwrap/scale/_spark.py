@@ -822,7 +822,9 @@ def spark_key_tallies(frame: Any, columns: list, split_spec: tuple, fn: Any, arg
     """Repeated rows (``RepeatedRowsWarning``): :func:`probwrap.shift._repeats.repeat_tallies`
     of the rows of a Spark DataFrame, keyed by
     ``fn(*args, Xb, wb)`` on the executors (chunks of each partition) and added up by one
-    ``groupBy`` of the keys and one aggregate: five numbers reach the driver."""
+    ``groupBy`` of the keys and one aggregate: five numbers reach the driver, and the three
+    sums of :func:`probwrap.scale._repeat_keys.dask_key_tallies` for rows selected on a
+    feature (0 where ``fn`` counts no labelled rows)."""
     import pandas as pd
     from pyspark.sql import functions as F
 
@@ -831,22 +833,29 @@ def spark_key_tallies(frame: Any, columns: list, split_spec: tuple, fn: Any, arg
     def keyed(batches):
         f, a = shared.value
         for pdf in _chunks(batches, CHUNK_ROWS):
-            keys, w = f(*a, *_split(*split_spec, pdf))
+            keys, w, at = f(*a, *_split(*split_spec, pdf))
             signed = np.ascontiguousarray(keys).view(np.int64)
-            yield pd.DataFrame({"k0": signed[:, 0], "k1": signed[:, 1], "w": w})
+            yield pd.DataFrame({"k0": signed[:, 0], "k1": signed[:, 1], "w": w,
+                                "a": np.zeros(w.shape[0]) if at is None else at})
 
-    keyed_rows = frame.select(*columns).mapInPandas(keyed, "k0 long, k1 long, w double")
+    keyed_rows = frame.select(*columns).mapInPandas(
+        keyed, "k0 long, k1 long, w double, a double")
     groups = keyed_rows.groupBy("k0", "k1").agg(
         F.sum("w").alias("gw"), F.sum(F.col("w") * F.col("w")).alias("gq"),
-        F.count(F.lit(1)).alias("gn"))
+        F.count(F.lit(1)).alias("gn"), F.sum(F.col("w") * F.col("a")).alias("ga"),
+        F.max("a").alias("seen"))
+    seen = F.col("seen") > 0
     row = groups.agg(
         F.count(F.lit(1)).alias("groups"), F.sum("gn").alias("rows"),
         F.sum(F.col("gw") * F.col("gw")).alias("group_sq"), F.sum("gw").alias("total"),
-        F.sum("gq").alias("sq")).collect()[0]
+        F.sum("gq").alias("sq"), F.sum("ga").alias("meet"),
+        F.sum(F.when(seen, F.col("gw") * F.col("gw")).otherwise(0.0)).alias("seen_group_sq"),
+        F.sum(F.when(seen, F.col("gq")).otherwise(0.0)).alias("seen_sq")).collect()[0]
     if row["rows"] is None:
-        return 0, 0, 0.0, 0.0, 0.0
+        return 0, 0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0
     return (int(row["rows"]), int(row["groups"]), float(row["group_sq"]), float(row["total"]),
-            float(row["sq"]))
+            float(row["sq"]), float(row["meet"]), float(row["seen_group_sq"]),
+            float(row["seen_sq"]))
 
 
 # -- the wrappers' Spark path --------------------------------------------------------------------
@@ -924,7 +933,8 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
     # one broadcast: the model (with a refit base model's fold models), the estimator, seeds
     shared = _broadcast(X, (owner.estimator_, est, source, seeds, owner._fold_scorer(),
                             (owner._repeat_reference(by_rows=True),
-                             owner._repeat_reference())))
+                             owner._repeat_reference(),
+                             getattr(owner, "_labelled_row_tally", None))))
     batch_type = X.schema[batch_col].dataType
     schema = T.StructType([
         T.StructField("batch", batch_type),
@@ -983,10 +993,13 @@ def monitor_spark(owner: Any, X: Any, batches: Any, batch_size: Any, sample_weig
         order = np.lexsort((w, *proba.T[::-1]))  # by class-0 probability, ..., then weight
         # a refit base model: the batch's rows scored by every fold model too, in the same order
         fold_proba = None if folds is None else [f[order] for f in folds.fold_proba(Xb)]
-        counts, codes = batch_repeat_reference(counts, Xb)
+        counts, codes, selected = batch_repeat_reference(counts, Xb)
+        if selected is not None:
+            selected = (selected[0][order], selected[1])
         row, unit, caught, repeats = monitor_proba(prior_est, src, seed_of[key], proba[order],
                                                    w[order], fold_proba, counts,
-                                                   None if codes is None else codes[order])
+                                                   None if codes is None else codes[order],
+                                                   selected)
         n, n_eff, prior, lower, upper, stat, pvalue, conv, by_class, ml, pseudo = row
         return pd.DataFrame({
             "batch": [key], "n_rows": [int(n)], "n_effective": [float(n_eff)],

@@ -29,7 +29,9 @@ posteriors clump (:func:`labelled_clumps`; since 5 December 2026). Rows in memor
 their features (the young, where the other features are coarse) coincide more often than any
 mix of the classes, in feature rows the labelled rows have: repeats held there are allowed up
 to the rate at least implied by how often the rows meet the labelled rows
-(:func:`selection_rate`; since 5 December 2026, session 30).
+(:func:`selection_rate`; since 5 December 2026, session 30). Dask and Spark rows alike: how
+often they meet the labelled rows is summed where they live (:func:`labelled_rows_at`,
+:func:`selection_from_sums`), so the same batch gives the same answer on every path.
 
 Rows in memory (a DataFrame or a numeric array, labelled and unlabelled alike) are identical
 only where their features agree as well: ``PriorShiftWrapper`` passes codes of the rows'
@@ -72,6 +74,9 @@ __all__ = [
     "labelled_repeat_counts",
     "repeats_beyond_chance",
     "selection_rate",
+    "selection_from_sums",
+    "identity_row_keys",
+    "labelled_rows_at",
     "REFERENCE_MODELS",
     "scored_by_other_models",
     "within_model_counts",
@@ -478,6 +483,82 @@ def selection_rate(labelled_keys: tuple, keys: np.ndarray,
     return float(min(meet * meet / own, 1.0))
 
 
+def identity_row_keys(X) -> np.ndarray | None:
+    """The 64-bit hash of every row's features that ``PriorShiftWrapper`` tallies the labelled
+    rows by at ``fit`` and reads :func:`selection_rate` with: a pandas DataFrame by pandas' row
+    hash, a numeric 2-d NumPy array by :func:`probwrap._row_hash.row_hashes`; None for other
+    inputs (sparse matrices, object arrays, Dask or Spark collections). A Dask block or the
+    chunk of a Spark partition (a DataFrame of the same columns and dtypes, or an array) is
+    hashed alike where it lives, so its rows meet the labelled rows as in memory.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> keys = identity_row_keys(np.array([[1.0, 2.0], [1.0, 2.0], [2.0, 1.0]]))
+    >>> bool(keys[0] == keys[1]), bool(keys[0] == keys[2])
+    (True, False)
+    """
+    from .._row_hash import row_hashes as _row_hashes
+
+    where_rows_live = hasattr(X, "__dask_graph__") or type(X).__module__.startswith("pyspark.sql")
+    try:
+        if hasattr(X, "iloc") and hasattr(X, "columns") and not where_rows_live:
+            import pandas as pd
+
+            return pd.util.hash_pandas_object(X, index=False).to_numpy()
+        if isinstance(X, np.ndarray) and X.ndim == 2 and X.dtype.kind in "biuf":
+            return np.asarray(_row_hashes(X))
+        return None
+    except (TypeError, ValueError):
+        return None
+
+
+def labelled_rows_at(labelled_keys: tuple, keys: np.ndarray) -> np.ndarray:
+    """How many labelled rows have each row's features (0 where none has): ``labelled_keys``
+    ``(distinct keys, rows of each)`` of the labelled rows, ``keys`` the rows'
+    (:func:`identity_row_keys`). Summed with the rows' weights where the rows live (Dask and
+    Spark), the rate at which they meet the labelled rows (:func:`selection_from_sums`)."""
+    ref, per = (np.asarray(a) for a in labelled_keys)
+    k = np.asarray(keys)
+    if ref.shape[0] == 0 or k.shape[0] == 0:
+        return np.zeros(k.shape[0])
+    at = np.minimum(np.searchsorted(ref, k), ref.shape[0] - 1)
+    return np.where(ref[at] == k, per[at], 0).astype(float)
+
+
+def selection_from_sums(labelled_keys: tuple, sums: tuple) -> tuple[float, float] | None:
+    """``judge_repeats(selected=...)`` from sums read where Dask or Spark rows live, the
+    rule of :func:`selection_rate` and of the repeats held in feature rows some labelled row
+    has, as :func:`repeats_of_rows` reads them of rows in memory. ``sums``: ``(sum_i w_i a_i,
+    sum_i w_i, sum_{g seen} W_g^2, sum_{i seen} w_i^2, sum_i w_i^2)``, ``a_i`` the labelled
+    rows at row ``i``'s features (:func:`labelled_rows_at`), "seen" rows and groups of
+    identical rows with ``a > 0``. None where :func:`selection_rate` gives None.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> per = np.array([2] * 5 + [8] * 5)
+    >>> labelled = (np.arange(10), per)
+    >>> keys = np.arange(5, 10)
+    >>> a = labelled_rows_at(labelled, keys)
+    >>> rate, _ = selection_from_sums(labelled, (a.sum(), 5.0, 5.0, 5.0, 5.0))
+    >>> bool(np.isclose(rate, selection_rate(labelled, keys)))
+    True
+    """
+    per = np.asarray(labelled_keys[1], dtype=float)
+    meet_sum, total, seen_group_sq, seen_sq, sq = (float(v) for v in sums)
+    m = float(per.sum())
+    if per.shape[0] == 0 or not (np.isfinite(total) and total > 0 and m > 1):
+        return None
+    own = float(np.sum(per * (per - 1.0)) / (m * (m - 1.0)))
+    if own <= 0 or meet_sum <= 0:
+        return None
+    meet = meet_sum / (total * m)
+    rate = float(min(meet * meet / own, 1.0))
+    excess = float(max(seen_group_sq - seen_sq, 0.0) / sq) if sq > 0 else 0.0
+    return rate, excess
+
+
 def _seen_excess(labelled: np.ndarray, keys: np.ndarray, codes: np.ndarray,
                  sample_weight: np.ndarray | None) -> float:
     """The part of the rows' design effect of their repeats, less 1, held by groups of
@@ -520,7 +601,9 @@ def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_pro
     rows' feature hashes, with ``labelled_keys`` the labelled rows' distinct ones and their
     counts: rows selected on their features coincide more often than any mix of the classes,
     in feature rows the labelled rows have (:func:`selection_rate`; since 5 December 2026,
-    session 30; rows in memory).
+    session 30; rows in memory, and each ``monitor`` batch on a Dask worker or Spark
+    executor; ``adapt`` on Dask and Spark rows reads the same rule from sums:
+    :func:`selection_from_sums`).
 
     Examples
     --------
