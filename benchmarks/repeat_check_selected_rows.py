@@ -14,6 +14,10 @@ fitted on the next 30 % and adapts to batches of the last 30 % (the loader of
   about 3).
 
 ``--old`` judges without :func:`probwrap.shift._repeats.selection_rate` (the rule before it).
+``--dask`` adapts to every batch on Dask too (two partitions) and counts the batches whose
+``RepeatedRowsWarning`` differs from memory's (raised or not, or other words or numbers) and
+whose mixture-check p-value differs (relative 1e-9); ``--old`` does not reach the Dask path (run
+the old code for its numbers).
 Measured in docs/evidence/prior_shift_log.md, "Repeat check on batches selected on a feature".
 
     nice python benchmarks/repeat_check_selected_rows.py --seeds 6     # ~2 min
@@ -67,6 +71,7 @@ def main() -> None:
     ap.add_argument("--sets", default=",".join(SETS))
     ap.add_argument("--old", action="store_true")
     ap.add_argument("--seed-base", type=int, default=5000)
+    ap.add_argument("--dask", action="store_true")
     a = ap.parse_args()
     if a.old:
         _rep.selection_rate = lambda *args, **kw: None
@@ -83,16 +88,32 @@ def main() -> None:
             wrapper = PriorShiftWrapper(FrozenEstimator(model), random_state=seed)
             wrapper.fit(X.iloc[lab], y[lab])
             for kind, b in batches(X, y, rest, rng, a.prior_batches):
-                with warnings.catch_warnings(record=True) as rec:
-                    warnings.simplefilter("always")
-                    wrapper.adapt(X.iloc[b])
-                rows.append(dict(set=name, seed=seed, kind=kind,
-                                 rep=any(r.category is RepeatedRowsWarning for r in rec)))
+                said, pval = _adapt(wrapper, X.iloc[b])
+                row = dict(set=name, seed=seed, kind=kind, rep=bool(said))
+                if a.dask:
+                    import dask.dataframe as dd
+
+                    said_d, pval_d = _adapt(wrapper, dd.from_pandas(X.iloc[b], npartitions=2))
+                    row.update(dask_rep=bool(said_d), differ=said_d != said,
+                               p_differ=not np.isclose(pval_d, pval, rtol=1e-9, atol=0))
+                rows.append(row)
     d = pd.DataFrame(rows)
     t = d.groupby(["set", "kind"]).rep.agg(["sum", "count"]).unstack("kind")
     pd.set_option("display.width", 200)
     print(t)
     print(d.groupby("kind").rep.agg(["sum", "count"]))
+    if a.dask:
+        print("Dask: warned, warning differs from memory's, mixture p-value differs")
+        print(d.groupby("kind")[["dask_rep", "differ", "p_differ"]].sum())
+
+
+def _adapt(wrapper, rows) -> tuple[list, float]:
+    """The words of ``adapt``'s RepeatedRowsWarning(s) and its mixture-check p-value."""
+    with warnings.catch_warnings(record=True) as rec:
+        warnings.simplefilter("always")
+        fitted = wrapper.adapt(rows)
+    said = [str(r.message) for r in rec if r.category is RepeatedRowsWarning]
+    return said, float(fitted.prior_estimate_.mixture_misfit_pvalue)
 
 
 if __name__ == "__main__":
