@@ -12,8 +12,8 @@ largest difference in test probabilities, the test log loss and cost per case, t
 the maps behind their anchors and the exact ranges; then a summary per kind of model.
 
 Run: ``nice python benchmarks/count_table_choices.py [SETS]``, default all seven sets
-(docs/aggregated_outcomes.md, "Count tables and choices (session 26)"; the cross-fitted
-draws since session 27: "Count tables in session 27").
+(docs/aggregated_outcomes.md, "Count tables and choices"; the cross-fitted
+draws since session 27: "Count tables with cross-fitted models and tallies").
 """
 
 from __future__ import annotations

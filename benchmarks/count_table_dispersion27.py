@@ -12,7 +12,7 @@ table's counts from a binomial around the Platt-mapped held-out probabilities (t
 check): false alarms. Prints one line per set: draws, warnings, median and largest dispersion.
 
 Run: ``nice python benchmarks/count_table_dispersion27.py`` (docs/aggregated_outcomes.md,
-"Count tables in session 27").
+"Count tables with cross-fitted models and tallies").
 """
 
 from __future__ import annotations

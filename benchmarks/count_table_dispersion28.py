@@ -28,7 +28,7 @@ isotonic fit (its level sets as parameters) and 8 bins of the log-odds; each lin
 draws a Platt map flags, how many are still flagged around the candidate.
 
 Run: ``nice python benchmarks/count_table_dispersion28.py [--candidates]``
-(docs/aggregated_outcomes.md, "Overdispersion or lack of fit (session 28)").
+(docs/aggregated_outcomes.md, "Overdispersion or lack of fit").
 """
 
 from __future__ import annotations

@@ -12,7 +12,7 @@ then replayed on them exactly as the library computes it (``recalibrated_plugin_
   ``_PLATT_WHEN_CROSSFIT = False``);
 * ``s26``: with session 26's Platt anchor where it puts every held-out row on one side;
 * ``s27``: with session 27's Platt anchor for a cross-fitted model whose fold probabilities
-  ``auto`` kept (``_PLATT_WHEN_CROSSFIT``; docs/decisions.md, "Tuned cost: session-27 changes").
+  ``auto`` kept (``_PLATT_WHEN_CROSSFIT``; docs/decisions.md, "Tuned cost: changes for few positives").
 
 Prints per sweep the geometric mean of test cost over the sigmoid's (0.001 added to both), the
 worst cell, the cells above 1.10x and the mean cost, and the cells whose cost changed between

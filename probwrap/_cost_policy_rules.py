@@ -97,7 +97,7 @@ PLATT_DEFAULT_MIN_CLASS_ROWS = 5
 #: not its plug-in rule splits the held-out rows (:func:`_platt_over_identity`). The fold
 #: models' log loss can say that *their* probabilities need no map; it says nothing about the
 #: refitted model's, and the cutoff is applied to the latter. False restores the rule of
-#: session 26 (docs/decisions.md, "Tuned cost: session-27 changes"). Only while the held-out
+#: session 26 (docs/decisions.md, "Tuned cost: changes for few positives"). Only while the held-out
 #: probabilities rank the classes less than outstandingly (``CROSSFIT_PLATT_MAX_AUC``).
 _PLATT_WHEN_CROSSFIT = True
 
@@ -346,7 +346,7 @@ def _platt_over_identity(cw: Any, p, y, w, t0: float, *, crossfit: bool = False)
     rows (whose probabilities the cutoff is applied to) does. survival's diabetic, logistic
     regression cross-fitted on 40 eyes, 40 draws: 0.637 a row against the sigmoid's 0.612 before,
     0.617 after (the own probabilities' cutoff 0.2 left up to 42 % of the test eyes unflagged
-    where flagging all is cheapest); docs/decisions.md, "Tuned cost: session-27 changes"."""
+    where flagging all is cheapest); docs/decisions.md, "Tuned cost: changes for few positives"."""
     import warnings
 
     from sklearn.frozen import FrozenEstimator

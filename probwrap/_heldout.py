@@ -479,7 +479,7 @@ def copied_case_cells(X: Any, counts: np.ndarray, index: Any = _HASH_ROWS) -> np
     The rule is :func:`copied_row_cells`'s, with every number counted in cases (the rows
     sharing a value, the pairs of equal values of :func:`_ties_by_chance`), so a table and its
     rows repeated keep the same cases together (session 27, docs/aggregated_outcomes.md,
-    "Count tables in session 27"). ``index``: :func:`feature_cell_index` of ``X`` when the
+    "Count tables with cross-fitted models and tallies"). ``index``: :func:`feature_cell_index` of ``X`` when the
     caller has it (None: every row distinct).
     """
     counts = np.asarray(counts, dtype=np.int64).ravel()

@@ -408,7 +408,7 @@ def warn_overdispersed_table(
             + (fit_remedy if fit_remedy is not None else
                "A map more flexible than Platt's (isotonic, binning or beta) or a better-fitting "
                "model is the remedy; the weights need no change (docs/aggregated_outcomes.md, "
-               "\"Overdispersion or lack of fit (session 28)\")."),
+               "\"Overdispersion or lack of fit\")."),
             UserWarning,
             stacklevel=stacklevel,
         )
@@ -428,7 +428,7 @@ def warn_overdispersed_table(
             "the features still tell; not groups whose cases share causes, so counting the "
             f"cases one by one in {what} is right. A model that uses these features better "
             "is the remedy; the weights need no change (docs/aggregated_outcomes.md, "
-            "\"Overdispersion or lack of fit (session 28)\").",
+            "\"Overdispersion or lack of fit\").",
             UserWarning,
             stacklevel=stacklevel,
         )

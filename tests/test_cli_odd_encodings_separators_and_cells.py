@@ -3,7 +3,7 @@
 Data: scikit-learn's breast cancer (a scaled logistic regression fitted on 280 rows, held-out
 probabilities of the other 289 written to CSV) and wine (three classes, for ``report
 --class-columns``). Every test here failed on the code before this session (see
-docs/command_line.md, "Session-27 user pass").
+docs/command_line.md, "Every verb on breast-cancer and wine files").
 """
 
 from __future__ import annotations

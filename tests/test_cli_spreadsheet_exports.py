@@ -3,7 +3,7 @@
 Data: scikit-learn's breast cancer (a scaled logistic regression fitted on 280 rows, held-out
 probabilities of the other 289 written to CSV as spreadsheets and other tools write them).
 Every test here failed on the code before this session (see docs/command_line.md,
-"Session-28 user pass").
+"Files as spreadsheets and other tools write them").
 """
 
 from __future__ import annotations

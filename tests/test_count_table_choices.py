@@ -9,7 +9,7 @@ size of the weights), the tuned cutoff's anchor (its row bounds) and the exact c
 ``cutoff_interval`` (Kish's size). On R's UCBAdmissions, Titanic and esoph tables (frozen
 models fitted on 300 other cases) the table chose another map than its repeated rows in 27 of
 78 draws of 60 and 300 cases and another tuned cutoff in 33 (docs/aggregated_outcomes.md,
-"Count tables and choices (session 26)"). The draws below are among those; every assertion on
+"Count tables and choices"). The draws below are among those; every assertion on
 the table failed before. The reference is the same wrappers on the rows repeated, whose
 weights are all 1 (nothing to read).
 """

@@ -1,5 +1,6 @@
-"""Work removed from fit paths in session 27 (docs/performance.md, "Re-measured 5 December
-2026 (session 27)"): the rows' feature hashes are made once per fit for every cell check, and
+"""Work removed from fit paths on 5 December 2026 (docs/performance.md, "Re-measured 5 December
+2026, after the count-table checks"): the rows' feature hashes are made once per fit for every
+cell check, and
 the row counts of unit weights make no row-long temporaries. The results are the same as the
 direct definitions (consistency tests, which also pass on the code before); the tests of the
 work done (one hashing pass, the traced memory) fail on the code before.
