@@ -316,7 +316,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         models score the labelled rows on scales that differ from fold to fold (a model whose
         scale changes from fit to fit, such as ``SGDClassifier``; see
         ``fold_spread_variation_``) or disagree about the rows (a decision tree, boosting on a
-        few hundred rows; ``fold_disagreement_``, since session 27): the refitted model is
+        few hundred rows; ``fold_disagreement_``): the refitted model is
         then one more unstable draw that the map does not know, and the fold models
         predict — unless the refit spreads its scores more than 1.1 times as widely as every
         fold model (nearest neighbours: a sharper model, not another draw; since 4 December
@@ -358,7 +358,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         cross-validation; ``method_notes_["auto"]`` says when the candidates were scored on a
         sample of the rows (above 20,000 held-out rows); ``method_notes_["temperature"]`` says
         when the one-standard-error rule passed over a softening temperature that scored above
-        the class shares (two classes; docs/small_data.md, twenty-second session);
+        the class shares (two classes; docs/small_data.md);
         ``method_notes_["temperature"]`` /
         ``["vector_scaling"]`` say when a sharpening temperature was capped at 1 or vector
         scaling replaced by temperature scaling, the fold models' scores being near-constant
@@ -402,8 +402,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         about the labelled rows, the variance of their map input scores across fold models
         (averaged over the rows) over the variance across rows of their mean score (0 when a
         fold model lacks a class). ``predict_with="auto"`` also predicts with the fold models
-        when it exceeds 0.03 (a decision tree, boosting on a few hundred rows; since session
-        27), unless the refit spreads more widely than every fold model.
+        when it exceeds 0.03 (a decision tree, boosting on a few hundred rows), unless the refit spreads more widely than every fold model.
 
     Examples
     --------

@@ -346,8 +346,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         docs/evidence/prior_shift_log.md, "The point estimate after a refit"). ``"auto"``: the rule of
         :class:`~probwrap.CalibrationWrapper`: the fold models when their score spreads on
         the labelled rows vary from fold to fold (``fold_spread_variation_`` above 0.10) or
-        the fold models disagree about the rows (``fold_disagreement_`` above 0.03, since
-        session 27) unless the refit spreads more than 1.1 times as widely as every fold model. Measured
+        the fold models disagree about the rows (``fold_disagreement_`` above 0.03)
+        unless the refit spreads more than 1.1 times as widely as every fold model. Measured
         on 27-60 labelled rows in docs/evidence/prior_shift_log.md, "Which model predicts after
         cross-fitting" (since 4 December 2026; before, always the refit).
     interval_covers : {"each_class", "all_classes"}, default="each_class"
@@ -355,14 +355,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         stored, see the attributes). ``"each_class"``: each class share's interval holds that
         share with probability ``confidence_level``, one class at a time; read together, all
         of them hold less often (the more classes, the less: 89.6 % at 95 % on the multiclass
-        cells of the session-22 real-data hunt). ``"all_classes"``: intervals that hold every
+        cells of ``benchmarks/shift_real_hunt22.py``). ``"all_classes"``: intervals that hold every
         class share at once with probability ``confidence_level``, for reading several shares
         together: each built like the per-class one at the level ``1 - (1 - confidence_level)
         / n_classes`` (Bonferroni; Goodman 1965 for multinomial proportions), about 1.2-1.4
         times as wide for 3-10 classes. With two classes the two are the same (one share is
         one minus the other). Measured in docs/evidence/prior_shift_log.md, "All class shares at once".
     feature_check_rows : int or None, default=None
-        Opt in to a check of the *features* at every ``adapt`` (session 27). None (the
+        Opt in to a check of the *features* at every ``adapt``. None (the
         default): nothing is kept and nothing is checked. A whole number ``m`` (at least 20;
         2,000 is a good start): ``fit`` keeps a sample of at most ``m`` labelled rows' numeric
         features with their labels and weights (stratified by class, every class keeping at
@@ -376,7 +376,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         finite (a sparse matrix, text or category columns, missing values) and for Dask or
         Spark rows; ``adapt`` refuses Dask or Spark rows while it is set, and does not run
         the check with ``cells`` (it counts rows as independent), saying so. ``monitor`` runs
-        it on every batch of rows in memory (session 28; fields ``feature_pvalue`` and
+        it on every batch of rows in memory (fields ``feature_pvalue`` and
         ``feature_check`` of its table, one warning naming the batches), not on Dask or
         Spark rows (said in a UserWarning). Measured in docs/evidence/prior_shift_log.md, "Feature check
         from adapt (session 27)" and "Feature check in monitor (session 28)".
@@ -682,8 +682,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             (docs/evidence/prior_shift_log.md, "How sure is the estimate, and has anything moved?"),
             except for a count table (whole numbers without a common factor above 1, some above
             1, at most 1e6 cases; docs/weights.md), which counts its cases, as the same cases
-            passed one row each: with a frozen model since session 27, and with a model
-            cross-fitted here since session 28, whose folds then split the table's cases as
+            passed one row each: with a frozen model, and with a model
+            cross-fitted here, whose folds then split the table's cases as
             they split the rows repeated ("Count tables with a refit model (session 28)"). The
             calibration inside reads them by the calibration maps' rule (docs/weights.md):
             row counts when they sum to at least the number of rows — whole-number weights
@@ -705,7 +705,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             though the folds keep such rows together); a two-class count table then read as
             its cases (a frozen model) whose groups vary more than binomial draws a
             ``UserWarning`` (docs/evidence/prior_shift_log.md, "Count tables in adapt (session 27)"),
-            which since session 28 says lack of fit of the map (or of the model) instead
+            which says lack of fit of the map (or of the model) instead
             when a flexible map of the probabilities (or the table's own features beside it)
             fits the groups binomially.
         **fit_params : dict
@@ -1250,7 +1250,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             most 1e6 cases: one row per cell, weighted by its cases) counts its cases, as the
             rows repeated by their counts would (the shrinkage toward the source prior, the
             shift test, the interval and the few-rows warnings read the total; the bootstrap
-            draws Poisson(count) cases of each row; since session 27, not with ``cells`` nor
+            draws Poisson(count) cases of each row; not with ``cells`` nor
             for a model cross-fitted here). Any other weights are relative: only their ratios
             matter, the evidence counted as Kish's effective number of rows,
             (sum w)^2 / sum w^2, so multiplying every weight by a constant changes nothing
@@ -1271,7 +1271,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             labelled classes do, a
             :class:`~probwrap.shift.RepeatedRowsWarning` says so (since 4 December 2026; for
             Dask or Spark rows too since 5 December 2026, of any number and grouped by their
-            features where they live since that day's session 25), and cells grouping the
+            features where they live), and cells grouping the
             identical rows count each group once.
 
         Returns
@@ -1894,7 +1894,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             each judged as ``adapt`` judges its rows (no ``cells`` given; in memory, on Dask
             blocks and Spark batches alike; since 5 December 2026).
         FeatureMixtureMisfitWarning
-            With ``feature_check_rows`` set (rows in memory, no ``cells``; since session 28):
+            With ``feature_check_rows`` set (rows in memory, no ``cells``):
             once per call, naming the batches whose features do not fit the labelled classes
             mixed at the batch's maximum-likelihood shares (combined p-value below 1 %, each
             batch checked as ``adapt`` checks its rows), with the first one's columns. The

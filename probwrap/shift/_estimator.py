@@ -391,8 +391,8 @@ class PriorEstimator(_Resampling):
         only their ratios (Kish's effective size), except a count table (whole numbers, no
         common factor above 1, some above 1, at most 1e6 cases; without ``cells``, and
         with ``source_fold`` only where its folds split cases: ``_case_folds``, the runs of
-        a table cross-fitted by its cases, from ``PriorShiftWrapper``, session 28; an
-        unlabelled table also after labelled rows of equal weight), whose cases count (since session 27: the effective size is the
+        a table cross-fitted by its cases, from ``PriorShiftWrapper``; an
+        unlabelled table also after labelled rows of equal weight), whose cases count (the effective size is the
         total, the bootstrap draws Poisson(count) cases of each row); the calibration
         (``calibration`` not None) reads them by the calibration maps' rule (docs/weights.md):
         row counts when they sum to at least the number of rows, otherwise relative. A
@@ -730,7 +730,7 @@ class PriorEstimator(_Resampling):
             Frequency weights of the unlabelled rows. A count table (whole numbers, no common
             factor above 1, some above 1, at most 1e6 cases) counts its cases: its total is the
             effective number of rows and the bootstrap draws Poisson(count) cases of each row,
-            as for the cases passed one row each (since session 27; not with ``cells``, nor for
+            as for the cases passed one row each (not with ``cells``, nor for
             an estimator fitted with ``source_fold``). Other weights: only their relative sizes
             matter, counted as Kish's effective sample size ``(sum w)^2 / sum w^2``.
         random_state : int, RandomState or None, default=None
@@ -777,7 +777,7 @@ class PriorEstimator(_Resampling):
             over it, since rows drawn again from a pool carry the pool's own deviation in
             every bin share (:func:`probwrap.shift._repeats.mixture_design_effect`; passed by
             ``PriorShiftWrapper.adapt`` where it raises
-            :class:`~probwrap.shift.RepeatedRowsWarning`, since 5 December 2026, session 30).
+            :class:`~probwrap.shift.RepeatedRowsWarning`, since 5 December 2026).
             Nothing else reads it.
 
         Returns
