@@ -221,8 +221,8 @@ _BASE_RATE_SE = 1.0
 #: (tried first: the rarer class holds under a fifth of the rows) not (0.123 +- 0.013); the
 #: temperature's mean probability 1.9 standard errors under the base rate; test log loss 1.12x
 #: scikit-learn's sigmoid, beta 0.93x. Measured on the cells of benchmarks/hunt22-23_sweep.py,
-#: calibration_tiny.py (grid and fresh) and small_data_sweep.py (docs/small_data.md, session
-#: 24, "auto cells above 1.10x").
+#: calibration_tiny.py (grid and fresh) and small_data_sweep.py (docs/evidence/small_data_log.md,
+#: "auto cells above 1.10x").
 _PASS_OVER_TEMPERATURE_OFF_BASE_RATE = True
 
 #: Two classes: where Platt scaling is tried before temperature scaling (see
@@ -237,7 +237,7 @@ _PASS_OVER_TEMPERATURE_OFF_BASE_RATE = True
 #: cross-fitted on 100 rows (5 voters): beta 0.1985 on the folds, Platt 0.1989 (standard error
 #: 0.0003: passed over), temperature 0.1988 (standard error 0.0095: kept); test log loss 1.10x
 #: scikit-learn's sigmoid, beta 0.96x. Measured on hunt24_sweep.py's draws and 24 redraws of its
-#: named cells (docs/evidence/small_data_log.md, "auto on 40 cross-fitted rows (session 25)"); ``False``
+#: named cells (docs/evidence/small_data_log.md, the section on auto on 40 cross-fitted rows); ``False``
 #: switches the rule off.
 _PASS_OVER_TEMPERATURE_AFTER_PLATT = True
 
@@ -252,7 +252,7 @@ _PASS_OVER_TEMPERATURE_AFTER_PLATT = True
 #: rarest), Gaussian naive Bayes cross-fitted on 40 rows: temperatures of 17-23 kept within a
 #: standard error of vector scaling in 12 of 20 draws, the rarest kind's mean probability
 #: 0.12-0.19 against its share 0.05; test log loss 1.241 against scikit-learn's sigmoid's
-#: 1.162 over the 20 draws (docs/evidence/small_data_log.md, "The session-26 hunt"). ``False`` switches
+#: 1.162 over the 20 draws (docs/evidence/small_data_log.md, the hunt26_sweep.py hunt). ``False`` switches
 #: the rule off.
 _PASS_OVER_TEMPERATURE_OFF_SHARES_MULTICLASS = True
 
@@ -369,7 +369,7 @@ class _AutoChoice:
             n_splits = int(min(cv, max(2, smallest)))
             # only a number of folds the user chose: the default 5 is lowered to the smallest
             # class's rows without a word (FewClassRowsWarning already names a tiny class; the
-            # session-29 hunt saw this warning on frozen models whose cv nobody had set)
+            # hunt29_sweep.py saw this warning on frozen models whose cv nobody had set)
             if self.cv is not None and int(cv) != 5 and n_splits < cv:
                 warnings.warn(
                     f"CalibrationWrapper(method='auto'): `cv`={int(cv)} asks for more folds than "
@@ -603,7 +603,7 @@ class _AutoChoice:
                  or not getattr(self, "_count_table_cases", True) else case_rows(w))
         if ((getattr(ho, "table_row", None) is not None or getattr(ho, "tally_cases", False))
                 and getattr(self, "_count_table_cases", True)):
-            # a count table cross-fitted by its cases (session 27): the held-out rows are
+            # a count table cross-fitted by its cases: the held-out rows are
             # (row, fold) pieces weighted by the cases held out there, whole numbers even when
             # they happen to share a factor; or a Dask or Spark tally of a count table's rows,
             # whose (bin, class) rows are weighted by their cases
@@ -612,13 +612,13 @@ class _AutoChoice:
             # a count table (whole-number weights, some above 1): the choice scores its cases
             # one by one, as it scores the rows repeated by their counts (np.repeat): the same
             # folds, rows per class, row bounds and standard errors (counted by Kish's size of
-            # the weights before session 26, so a table and its repeated rows could get
+            # the weights until 5 December 2026, so a table and its repeated rows could get
             # different maps; docs/aggregated_outcomes.md, "Count tables and choices")
             ho = _cases_of(ho, cases)
             scores, w = scores[cases], np.ones(cases.shape[0])
         else:
             # any other weights are relative for the choice: the candidates are fitted on them
-            # rescaled to Kish's size, so their scale moves no choice (session 28; before,
+            # rescaled to Kish's size, so their scale moves no choice (since 5 December 2026; before,
             # weights summing to at least the rows were counted as they stood, and x1,000 chose
             # another map on wine and iris)
             w = choice_weights(w, ho)

@@ -55,7 +55,7 @@ FEW_CLASS_ROWS = 5
 #: ``_SEPARATED_MISRANKED_SHARE`` of the pairs of one row of each class, warns
 #: (UnverifiedSharpeningWarning): so few rows cannot tell a chance separation from a real one.
 #: 100 is the Platt-first bound of ``auto`` on cross-fitted rows; the DAAG nsw74psidA draws of
-#: the session-29 hunt misranked 0-3 of ~220 pairs (at most 1.4 %).
+#: benchmarks/hunt29_sweep.py misranked 0-3 of ~220 pairs (at most 1.4 %).
 _SHARPENING_CHECK_MAX_ROWS = 100
 _SEPARATED_MISRANKED_SHARE = 0.02
 
@@ -65,7 +65,7 @@ _SEPARATED_MISRANKED_SHARE = 0.02
 #: (``TemperatureMap``: a gamma prior at the scale giving the scores a root-mean-square of one),
 #: not by errors the rows show; a model with very wide log-odds (naive Bayes, boosting) then
 #: keeps a temperature above 1 that still leaves most rows far more confident than the rows can
-#: check. DAAG's nsw74psidA, 30 cross-fitted rows (session 30): naive Bayes (T = 5.6-7.9) and
+#: check. DAAG's nsw74psidA, 30 cross-fitted rows (benchmarks/hunt30_sweep.py): naive Bayes (T = 5.6-7.9) and
 #: boosting (T = 3.3) kept by ``auto`` on held-out scores misranking 0-3.8 % of the pairs, test
 #: log loss 1.28-1.43x scikit-learn's sigmoid, quiet (docs/evidence/small_data_log.md).
 _SOFTENED_MISRANKED_SHARE = 0.05
@@ -117,14 +117,14 @@ REFIT_WIDER_LIMIT = 1.10
 #: score) by more than this, again unless the refit spreads more widely than every fold model
 #: (:data:`REFIT_WIDER_LIMIT`). Such a model changes with the rows it is fitted on (a decision
 #: tree, boosting on a few hundred rows), so the average of the fold models is a smoother,
-#: better model than any one fit, and the refit is one more unstable fit. Chosen in session 27
+#: better model than any one fit, and the refit is one more unstable fit. Chosen
 #: with benchmarks/hunt27_sweep.py --fold-check (0.01-0.2 tried): its twelve binary sets,
 #: cross-fitted, 40-300 rows, two draws, 280 cells: test log loss over scikit-learn's sigmoid
 #: 0.951 -> 0.932, cells above 1.10x 17 -> 6 (a single tree on openintro's bdims, 100 rows:
 #: 0.429 -> 0.329, the sigmoid 0.322); hunt26_sweep.py's ten binary sets with nearest
 #: neighbours and SGD, 115 cells: 0.742 -> 0.737, 5 -> 1. Where the fold models lose (up to
 #: 1.32x the refit), the refit was far below the sigmoid (docs/calibration.md, "Which model
-#: predicts"). Checked on multiclass data in session 28 (benchmarks/multiclass_rules28.py: ten
+#: predicts"). Checked on multiclass data (benchmarks/multiclass_rules28.py: ten
 #: bundled sets, 3-10 classes, five models, 30-300 rows, five draws, 550 cells): 0.9966 of the
 #: refit's test log loss against 1.0008 for the spread rule alone; 0.02-0.1 within 0.2 % of
 #: it, a limit scaled by the number of classes worse (1.0007); kept.
@@ -462,7 +462,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
     #: the fold models are kept through ``fit`` (read by ``_heldout._cross_fit``): the refit
     #: check compares them with the refitted model; they stay only when they predict
     _keep_fold_models = True
-    _split_table_cases = True  # a count table's cases split into folds (session 27)
+    _split_table_cases = True  # a count table's cases split into folds
 
     # -- fitting ---------------------------------------------------------------------------
     def fit(self, X: Any, y: Any, sample_weight: Any = None, **fit_params: Any) -> CalibrationWrapper:
@@ -511,7 +511,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         scores (a temperature below 1, a Platt slope above 1) while those scores misrank at
         most ``_SEPARATED_MISRANKED_SHARE`` of the weighted pairs of one row of each class
         (ties count half), or keeps a temperature above 1 on scores misranking at most
-        ``_SOFTENED_MISRANKED_SHARE`` of them. A cap on such sharpening was tried in session 29 and reverted: it
+        ``_SOFTENED_MISRANKED_SHARE`` of them. A cap on such sharpening was tried and reverted: it
         also removed right sharpenings on sets that really are separable, which the same few
         rows cannot tell from a lucky draw (docs/evidence/small_data_log.md)."""
         if scores.ndim != 1:
@@ -597,7 +597,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             counts = ho.class_row_counts(w)
             if counts[counts > 0].min() >= 2:
                 # with 2-4 rows of a class auto scores its maps on folds and chooses one, and
-                # said nothing until session 24 (benchmarks/hunt24_sweep.py: KMsurv's pneumon,
+                # said nothing until 5 December 2026 (benchmarks/hunt24_sweep.py: KMsurv's pneumon,
                 # 2 children hospitalised among 100 rows; the tuned cost rule and
                 # PriorShiftWrapper warned on the same rows). Below 2 the fallback warns.
                 self._warn_few_class_rows(counts)
@@ -789,7 +789,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             return
         response = self.response_
         n = ho.y_index.shape[0]
-        # a count table cross-fitted by its cases (session 27): X's rows, each as many times
+        # a count table cross-fitted by its cases: X's rows, each as many times
         # as its count, as the spread of the rows repeated; other weights: a row of weight 2
         # counts as two rows
         if getattr(ho, "table_row", None) is not None:
@@ -897,7 +897,7 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         """Say so when weights that do not look like counts (not whole numbers, or whole
         numbers sharing a factor) sum to at least the rows, so the map counts them as rows and
         their scale moves ``predict_proba``, as ``PriorShiftWrapper.fit`` says for its own
-        calibration (session 28: before, weights drawn from 0.2-3 times 1,000 moved a Platt
+        calibration (since 5 December 2026: before, weights drawn from 0.2-3 times 1,000 moved a Platt
         map's probabilities by up to 0.37 on wine without a word, while times 1e-3 warned).
         ``auto``'s warning about a shared factor already covers whole numbers there."""
         w = (getattr(ho, "row_weight", None) if getattr(ho, "table_row", None) is not None

