@@ -294,8 +294,9 @@ def class_score_moments(
 
 #: Whether the labelled classes' score spread is floored at the one the calibrated posteriors
 #: imply (:func:`floor_class_spread`) in the multiclass interval of ``PriorEstimator.estimate``;
-#: a benchmark may switch it off to compare (session 29; the two-class score interval has no
-#: such floor: measured there, it covered none of the misses, docs/evidence/prior_shift_log.md).
+#: a benchmark may switch it off to compare (since 5 December 2026; the two-class score
+#: interval has no such floor: measured there, it covered none of the misses,
+#: docs/evidence/prior_shift_log.md).
 SPREAD_FLOOR = True
 
 
@@ -333,7 +334,7 @@ def floor_class_spread(class_moments: tuple, implied: np.ndarray) -> tuple:
     correlation of skewed data that makes Student's t anti-conservative on one side (Johnson
     1978, "Modified t tests and confidence intervals for asymmetrical populations", JASA 73,
     536-544, cited from memory); the implied spread reads the rows a class's own rows missed
-    from the other classes' rows, where the model puts them (session 29)."""
+    from the other classes' rows, where the model puts them."""
     means, covs, n_c = class_moments
     covs = np.array(covs, dtype=float, copy=True)
     for c in range(covs.shape[0]):
@@ -384,7 +385,7 @@ def moment_prior_interval(
     score along ``r`` directions only), the shares are identified only along those ``r``
     directions and each share's interval is its whole range over the simplex's points
     consistent with them (:func:`_partial_moment_interval`); the covariance and degrees of
-    freedom are then NaN. Before session 28 such a ``B`` went to the inverse regardless, and
+    freedom are then NaN. Until 5 December 2026 such a ``B`` went to the inverse regardless, and
     its rounding-level singular values decided the interval: on R's ``HairEyeColor``
     (a frozen gradient-boosting model with two distinct posterior rows) the ends flipped
     between [0, 1] and [0.135, 0.909] when the weights changed in the last bit.

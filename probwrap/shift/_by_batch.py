@@ -140,7 +140,7 @@ def class_shift_scores(estimator: PriorEstimator, proba: Any, sample_weight: Any
 
 def _refuse_missing_batches(labels: np.ndarray) -> None:
     """A ``ValueError`` when a batch label is missing (None, NaN, ``pd.NA`` or NaT), as the
-    command line refuses an empty batch cell: before session 29 such rows silently formed a
+    command line refuses an empty batch cell: until 5 December 2026 such rows silently formed a
     batch of their own ("nan"), placed in the table, and in a chart read off it, where its
     first row happened to fall."""
     from ..metrics._groups import _missing_label
@@ -203,7 +203,7 @@ def prior_by_batch(
         the batch (its first row's value is read; at least 1): the batch's mixture check
         counts its rows over it (:meth:`PriorEstimator.estimate`; ``PriorShiftWrapper.monitor``
         passes :func:`probwrap.shift._repeats.mixture_design_effect` of the batches that raise
-        :class:`~probwrap.shift.RepeatedRowsWarning`; since session 30 of 5 December 2026).
+        :class:`~probwrap.shift.RepeatedRowsWarning`; since 5 December 2026).
 
     Warns
     -----

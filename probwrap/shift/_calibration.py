@@ -240,7 +240,7 @@ def _choose_tail_cases(
     weights.md): the folds are folds of CASES, exactly those of the table's cases passed one
     row each (ordered by class, then row; case ``j`` of that order in fold ``j mod F``), as
     counts of each row's cases in each fold, never expanding them; the paired difference's
-    mean and standard error are the cases'. Before (session 27), the folds split the table's
+    mean and standard error are the cases'. Until 5 December 2026, the folds split the table's
     rows (its cells), and the flat or compressed tail a table chose could differ from its
     cases' (vcd CoalMiners, naive Bayes, 150 labelled cases: scale 1.00 on the table, 1.36 on
     the cases; benchmarks/shift_real_hunt27.py)."""

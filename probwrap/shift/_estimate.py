@@ -55,8 +55,8 @@ class PriorEstimate:
     interval : ndarray of shape (k, 2) or None
         Confidence interval per class, when requested: each row holds its own class share
         with probability ``confidence_level``, one class at a time. With more than two
-        classes all rows at once hold less often (on the session-22 real sets, 89.6 % at
-        95 %); see ``all_shares_interval``.
+        classes all rows at once hold less often (on the real sets of
+        benchmarks/shift_real_hunt22.py, 89.6 % at 95 %); see ``all_shares_interval``.
     shift_statistic, shift_pvalue : float or None
         Test of "no shift", when requested (see :func:`shift_score_test`).
     distance : float
@@ -113,7 +113,7 @@ class PriorEstimate:
         the labelled rows. The refit model's posteriors of those rows are not the cross-fitted
         ones the predicted no-shift harm was read from, so where the shift test's p-value is at
         least 0.10 :func:`~probwrap._prior_shift.evidence_gate` holds the move to
-        ``2 % * (1 - labelled_row_share)`` of that harm instead of 2 % (since session 29).
+        ``2 % * (1 - labelled_row_share)`` of that harm instead of 2 % (since 5 December 2026).
         None otherwise (a frozen model, Dask or Spark rows, inputs whose rows cannot be
         hashed, estimates made outside the wrapper): the 2 % cap as before.
     """
@@ -147,7 +147,7 @@ class PriorNotIdentifiedWarning(UserWarning):
     predictions are nearly the same, for two classes the true- and false-positive rates are
     within sampling error of each other): the estimator then returns the source prior with an
     interval spanning [0, 1] instead of a confident-looking number. With more than two
-    classes (since session 28) also where the labelled classes' mean scores move along fewer
+    classes (since 5 December 2026) also where the labelled classes' mean scores move along fewer
     than ``k - 1`` directions of the class shares (a model with only a few distinct posterior
     rows): the message names how many, and each share's interval is its whole range over the
     shares consistent with the identified directions
@@ -179,7 +179,7 @@ class NoConsistentPriorWarning(UserWarning):
     not reject at ``1 - confidence_level``; when it rejects every share, the labelled and the
     unlabelled rows differ by more than a change of class shares explains (the features of a
     class moved too, or the batch was selected on them), and the interval is the single
-    least-rejected share. Before session 29 a plain ``UserWarning`` with the same message;
+    least-rejected share. Until 5 December 2026 a plain ``UserWarning`` with the same message;
     this subclass of it lets a user filter or catch it by name.
     """
 

@@ -150,17 +150,18 @@ def _table_cases(w: np.ndarray, effective_rows: float | None, cells: Any,
     whole numbers, some above 1, no common factor above 1, at most 1e6 cases) read as CASES:
     the prior-shift estimate, shift test, intervals and few-rows warnings then count its total
     as rows and the bootstraps draw Poisson(count) cases per row, as for the same cases passed
-    one row each (session 27). None (the relative reading, Kish's effective size) for other
-    weights, when ``effective_rows`` overrides the count (a tally's bins), with ``cells``
+    one row each (since 5 December 2026). None (the relative reading, Kish's effective size)
+    for other weights, when ``effective_rows`` overrides the count (a tally's bins), with ``cells``
     (the cells' clustering counts the units instead) or with ``folds``, the labelled rows'
     folds of a cross-fitted model: its folds split the table's rows (cells), not its cases,
     and counting the cases of such fold models' held-out scores harmed (R's HairEyeColor,
     logistic regression refit on a table of 150 students: the shift test rejected at p = 1e-21
     with no shift and adapt's log loss rose 1.6-1.8 times; the cases as rows: p = 0.5), so
-    a cross-fitted estimator kept Kish's reading on both sides in session 27.
+    a cross-fitted estimator kept Kish's reading on both sides (docs/evidence/prior_shift_log.md,
+    the section on count tables in adapt).
 
-    ``case_folds`` (session 28): the folds split CASES, as the folds of the same cases passed
-    one row each do: the labelled rows are a count table cross-fitted by its cases
+    ``case_folds`` (since 5 December 2026): the folds split CASES, as the folds of the same
+    cases passed one row each do: the labelled rows are a count table cross-fitted by its cases
     (:meth:`probwrap._heldout.HeldOutClassifierBase._table_case_folds`, its held-out rows the
     (row, fold) runs of cases weighted by their length) or rows of equal weight. A table is
     then read as its cases with ``folds`` too; on the labelled side ``w`` holds the runs'
@@ -195,7 +196,7 @@ def _count_table_hint(w: np.ndarray, n_units: float, cross_fitted: bool = False)
     if not w.size or not np.all(w == np.round(w)) or not float(w.max()) > 1.0:
         return ""
     total = float(w.sum())
-    if whole_counts(w) is not None:  # a count table: its cases were counted (since session 27)
+    if whole_counts(w) is not None:  # a count table: its cases were counted
         if not cross_fitted or not total > 2.0 * n_units:
             return ""
         return (
@@ -429,7 +430,7 @@ class PriorEstimator(_Resampling):
         self.n_classes_ = k
         # a count table's cases (_table_cases): its total counts as the labelled rows, and
         # the bootstrap draws Poisson(count) cases of each row (_resample._bootstrap)
-        # ``_case_folds`` (PriorShiftWrapper, session 28): the rows are the runs of a count
+        # ``_case_folds`` (PriorShiftWrapper): the rows are the runs of a count
         # table's cases that share a row and a fold (the table cross-fitted by its cases);
         # their lengths are its cases, as the same cases passed one row each
         case_runs = (_case_runs(w) if _case_folds and self._src_fold is not None
@@ -472,7 +473,7 @@ class PriorEstimator(_Resampling):
         # and the labelled rows' class-conditional score moments behind the default interval
         # (moment_prior_interval): k small matrices
         # (each class's spread floored at the one the posteriors imply, _floored: kept in the
-        # summary, so a fit beyond 20,000 rows that keeps no rows floors it too; session 29)
+        # summary, so a fit beyond 20,000 rows that keeps no rows floors it too)
         self._class_scores = (
             self._floored(class_score_moments(class_score_sums(p_cal, y_idx, w,
                                                                self.source_prior_),
@@ -578,8 +579,8 @@ class PriorEstimator(_Resampling):
         ``SPREAD_FLOOR`` off. A class's few labelled rows that miss its rows the model confuses
         with another class give a mean score that is off and a spread that is too small
         together (R's mlmRev ``Exam``, 150 labelled rows: the 95 % interval missed 15 of 50
-        cells, 11 without a warning; docs/evidence/prior_shift_log.md, "Intervals that miss on
-        an unusual labelled draw (session 29)")."""
+        cells, 11 without a warning; docs/evidence/prior_shift_log.md, the section on intervals
+        that miss on an unusual labelled draw)."""
         source = self._source_rows()
         if moments is None or source is None or not _analytic.SPREAD_FLOOR:
             return moments
@@ -816,7 +817,7 @@ class PriorEstimator(_Resampling):
         # a count table's cases (_table_cases): its total counts as the unlabelled rows (the
         # pseudo-rows, the shift test, the intervals and the few-rows warning read it) and the
         # bootstrap draws Poisson(count) cases of each row, as for the cases passed as rows
-        # (with a cross-fitted model: where its folds split cases, session 28)
+        # (with a cross-fitted model: where its folds split cases)
         split_cases = getattr(self, "_folds_split_cases", False)
         cases_t = _table_cases(w, effective_rows, cell_t, getattr(self, "_src_fold", None),
                                case_folds=split_cases)
@@ -992,7 +993,7 @@ class PriorEstimator(_Resampling):
                     sums = class_score_sums(self.calibrate(source[0]), source[1], w_fold, src)
                     cases = getattr(self, "_src_cases", None)
                     if cases is not None:
-                        # a count table's runs of cases (session 28): each class's Kish count
+                        # a count table's runs of cases: each class's Kish count
                         # over its cases, a run of c cases of weight w_fold / c each (the same
                         # cases passed one row each give exactly this)
                         sums = (*sums[:3], np.bincount(
@@ -1377,7 +1378,7 @@ class PriorEstimator(_Resampling):
             + ", and the estimate along them is EM's starting point, not evidence.")
         notes = getattr(self, "_rank_notes", None)
         if notes is not None:
-            # within PriorShiftWrapper.adapt: said in the wrapper's one warning (session 29)
+            # within PriorShiftWrapper.adapt: said in the wrapper's one warning
             if message not in notes:
                 notes.append(message)
             return True

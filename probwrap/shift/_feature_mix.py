@@ -39,8 +39,9 @@ and the test holds its level; with a single held-out half instead (Lopez-Paz & O
 the level is exact but the result depends on which half.
 
 Which columns. The discriminator says *whether* the rows differ, not where. Beside it each
-column is compared on its own (session 27): the unlabelled rows' weighted distribution of the
-column against the re-weighted labelled rows', by the two-sample Kolmogorov-Smirnov distance
+column is compared on its own (since 5 December 2026): the unlabelled rows' weighted
+distribution of the column against the re-weighted labelled rows', by the two-sample
+Kolmogorov-Smirnov distance
 (the largest gap between the two weighted empirical distribution functions; a slide, a band
 or a cut of the column all open one) with Smirnov's asymptotic p-value on Kish's effective
 counts (with equal weights SciPy's ``ks_2samp(method="asymp")``, tested), and the p-values of
@@ -114,7 +115,7 @@ class FeatureMixtureMisfit:
         The number of folds.
     feature_names : tuple of str
         The columns' names: a DataFrame's column names or ``feature_names`` when given, else
-        ``x0``, ``x1``, ... (session 27).
+        ``x0``, ``x1`` and so on.
     column_distance : ndarray of shape (d,)
         Per column: the Kolmogorov-Smirnov distance between the unlabelled rows' weighted
         distribution and the re-weighted labelled rows' (0: the same; 1: no overlap).
@@ -139,8 +140,9 @@ class FeatureMixtureMisfit:
     combined_pvalue : float
         ``min(1, 2 min(pvalue, min(column_pvalue_holm)))``: the discriminator and the columns
         read together (Bonferroni over the two, so it holds its level whatever their
-        dependence). The warning comes when it is below ``level`` (session 27; before, when
-        ``pvalue`` was): a batch that differs in one column is seen by that column's test on
+        dependence). The warning comes when it is below ``level`` (since 5 December 2026;
+        before, when ``pvalue`` was): a batch that differs in one column is seen by that
+        column's test on
         far fewer rows than the discriminator needs.
     """
 

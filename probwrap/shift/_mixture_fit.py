@@ -114,7 +114,7 @@ def class_mixture_misfit(
         Overrides the unlabelled side's Kish count (rows repeated once per fold model, or a
         count table's cases).
     source_cases : ndarray of shape (m,), default=None
-        The labelled side is a count table (since session 27): every row's whole-number count
+        The labelled side is a count table (since 5 December 2026): every row's whole-number count
         of cases, ``source_sample_weight`` proportional to it. Each class then counts its
         cases (not Kish's count) and the bin edges are the cases' quantiles, exactly as for
         the cases passed one row each.

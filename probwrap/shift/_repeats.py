@@ -29,7 +29,7 @@ posteriors clump (:func:`labelled_clumps`; since 5 December 2026). Rows in memor
 their features (the young, where the other features are coarse) coincide more often than any
 mix of the classes, in feature rows the labelled rows have: repeats held there are allowed up
 to the rate at least implied by how often the rows meet the labelled rows
-(:func:`selection_rate`; since 5 December 2026, session 30). Dask and Spark rows alike: how
+(:func:`selection_rate`; since 5 December 2026). Dask and Spark rows alike: how
 often they meet the labelled rows is summed where they live (:func:`labelled_rows_at`,
 :func:`selection_from_sums`), so the same batch gives the same answer on every path.
 
@@ -43,10 +43,10 @@ of its features (where the labelled rows' features were read at ``fit``; identic
 give identical posteriors) or else of its posteriors, and the engine counts the rows and sums
 the weights of each key by a shuffle (:func:`key_tallies` on each share of the keys), so only
 five numbers per share reach the client and every set is judged, not only sets of at most
-20,000 rows (since 5 December 2026, session 25). Scores read from files are grouped by their
+20,000 rows (since 5 December 2026). Scores read from files are grouped by their
 scores alone (they are all the file gives); a reference file of out-of-fold scores, which meets
 none of the unlabelled rows' repeated scores, has its ties read over one fold's pairs
-(:func:`scored_by_other_models`, :func:`within_model_counts`; since 5 December 2026, session 25).
+(:func:`scored_by_other_models`, :func:`within_model_counts`; since 5 December 2026).
 """
 
 from __future__ import annotations
@@ -98,7 +98,7 @@ class RepeatedRowsWarning(UserWarning):
     posteriors agree exactly (since 5 December 2026: a model whose posteriors saturate at
     exactly 0 or 1, or a tree's leaves, give distinct rows the same posteriors, and a forest's
     tied vote shares hid copied rows); Dask and Spark rows alike, by a key of their features
-    where they live, where the labelled rows were so read (since 5 December 2026, session 25).
+    where they live, where the labelled rows were so read (since 5 December 2026).
     Other inputs (sparse matrices, object arrays, labelled rows fitted from Dask or Spark) and
     scores read from files (``probwrap prevalence --reference``) are grouped by their
     posteriors alone, the labelled rows' rate of coincidences read alike;
@@ -112,8 +112,8 @@ class RepeatedRowsWarning(UserWarning):
     (:mod:`probwrap.shift._repeats`), and by ``PriorShiftWrapper.monitor`` once per call,
     naming the batches whose rows do so (each batch judged by the same rule, in memory, on a
     Dask worker or a Spark executor; since 5 December 2026). Not judged: labelled rows not
-    kept as rows (more than 20,000, or fitted from more than 20,000 Dask or Spark rows; before
-    session 25 of 5 December 2026 also ``adapt`` on more than 20,000 Dask or Spark rows).
+    kept as rows (more than 20,000, or fitted from more than 20,000 Dask or Spark rows; until
+    5 December 2026 also ``adapt`` on more than 20,000 Dask or Spark rows).
     Rows resampled with replacement from a pool, or copied
     records, carry the pool's own sampling error, which an interval counting every row as an
     independent draw leaves out: on R's AER PhDPublications and survival nwtco, batches of 400
@@ -205,8 +205,8 @@ def labelled_row_share(labelled_keys: np.ndarray | None, keys: np.ndarray | None
 
     ``PriorShiftWrapper`` reads it for a model refit on the labelled rows, whose posteriors of
     a row it was fitted on are not the cross-fitted ones its calibration and the per-draw cap's
-    predicted harm were read from (docs/evidence/prior_shift_log.md, "Per-draw cap on repeated
-    rows (session 29)").
+    predicted harm were read from (docs/evidence/prior_shift_log.md, the section on the per-draw
+    cap on repeated rows).
 
     Examples
     --------
@@ -600,8 +600,8 @@ def repeats_of_rows(estimator, counts: tuple | None, proba: np.ndarray, fold_pro
     of coincidences differs by class; the larger of the two is taken). ``row_keys``: the
     rows' feature hashes, with ``labelled_keys`` the labelled rows' distinct ones and their
     counts: rows selected on their features coincide more often than any mix of the classes,
-    in feature rows the labelled rows have (:func:`selection_rate`; since 5 December 2026,
-    session 30; rows in memory, and each ``monitor`` batch on a Dask worker or Spark
+    in feature rows the labelled rows have (:func:`selection_rate`; since 5 December 2026;
+    rows in memory, and each ``monitor`` batch on a Dask worker or Spark
     executor; ``adapt`` on Dask and Spark rows reads the same rule from sums:
     :func:`selection_from_sums`).
 

@@ -223,7 +223,7 @@ class _Resampling:
         ``cases`` (the whole-number counts of an unlabelled count table, one per row) and the
         labelled table's counts kept by ``fit`` (``_src_cases``): a row standing for ``c``
         cases holds Poisson(``c``) cases of a resample, as ``c`` rows of weight 1 drawn
-        Poisson(1) times each would (since session 27; before, Poisson(1) copies of the row),
+        Poisson(1) times each would (since 5 December 2026; before, Poisson(1) copies of the row),
         and the jackknife leaves out groups of cases (:meth:`_jackknife`).
 
         ``cells`` (codes ``0 .. G - 1`` of the unlabelled rows), and the labelled rows' cells
