@@ -380,7 +380,7 @@ def heldout_rows_from_tally(owner: Any, estimator: Any, tally: ScoreTally, respo
     class_rows = tally.weighted_rows_by_label
     cases = from_tally and tally_is_count_table(tally)
     if cases:
-        # a count table's tally (session 27): its weights count cases, as in memory, where
+        # a count table's tally: its weights count cases, as in memory, where
         # the steps that count rows count the table's cases (docs/weights.md)
         class_rows = np.round(np.asarray(tally.label_weight, dtype=float)).astype(np.int64)
     ho = HeldOutPredictions(
@@ -498,11 +498,11 @@ def batch_repeat_reference(counts: Any, Xb: Any) -> tuple:
     posteriors or None[, the labelled rows' distinct feature hashes and rows of each])``
     (``PriorShiftWrapper._repeat_reference(by_rows=True)``, ``()`` and
     ``_labelled_row_tally``); with the first, the batch's rows are grouped by their features
-    too, as in memory (since 5 December 2026, session 25; before, by their posteriors alone),
+    too, as in memory (since 5 December 2026; before, by their posteriors alone),
     and with the third a batch selected on its features is judged by how often its rows meet
     the labelled rows (:func:`probwrap.shift._repeats.selection_rate`), the hashes read here as
-    in memory (:func:`probwrap.shift._repeats.identity_row_keys`; since session 30 of 5
-    December 2026)."""
+    in memory (:func:`probwrap.shift._repeats.identity_row_keys`; since 5 December
+    2026)."""
     from ..shift._repeats import identity_row_keys, row_key_pairs
 
     if counts is None:
@@ -543,8 +543,8 @@ def monitor_proba(est, source, seed, proba, w, fold_proba=None, counts=None, row
     codes of the batch's features (:func:`batch_repeat_reference`), with ``counts`` read by
     features too. The repeats are judged first, so that the batch's mixture check counts
     them by their design effect (:func:`probwrap.shift._repeats.mixture_design_effect`), as
-    ``monitor`` in memory does (``prior_by_batch(repeat_design_effect=...)``; since session 30
-    of 5 December 2026: before, Dask and Spark batches counted repeated rows as independent).
+    ``monitor`` in memory does (``prior_by_batch(repeat_design_effect=...)``; since
+    5 December 2026: before, Dask and Spark batches counted repeated rows as independent).
     ``selected``: ``(the rows' feature hashes, the labelled rows' tally)`` of
     :func:`batch_repeat_reference`, the rule for batches selected on a feature, as in memory
     (``repeats_of_rows(row_keys=, labelled_keys=)``)."""

@@ -216,7 +216,7 @@ def _class_score_sums(block, calibrator, src):
     su = onehot.T @ u
     suu = np.einsum("nc,ni,nj->cij", onehot, u, u)
     # and weighted by each row's posterior of every class, for the spread the posteriors imply
-    # (probwrap.shift._analytic.implied_class_covs; session 29)
+    # (probwrap.shift._analytic.implied_class_covs)
     pw = p * w[:, None]
     return (su, suu, onehot.sum(axis=0), (onehot * w[:, None]).sum(axis=0),
             pw.T @ u, np.einsum("nc,ni,nj->cij", pw, u, u), pw.sum(axis=0))
@@ -366,7 +366,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
              and total <= COUNT_TABLE_MAX_CASES)
     if cases:
         # a count table (whole numbers, no common factor above 1, some above 1): its cases, as
-        # in memory (probwrap.shift._estimator._table_cases; since session 27)
+        # in memory (probwrap.shift._estimator._table_cases)
         est.n_source_effective_ = float(total)
     if eta_sums is not None:
         from ..shift._analytic import labelled_cov_from_sums
@@ -385,7 +385,7 @@ def fit_multiclass_source(owner: Any, X: Any, y: Any, sample_weight: Any):
 
         if _analytic.SPREAD_FLOOR:
             # each class's spread floored at the one the posteriors imply, as in memory
-            # (PriorEstimator._floored, implied_class_covs, from the same sums; session 29)
+            # (PriorEstimator._floored, implied_class_covs, from the same sums)
             safe = np.maximum(spw, np.finfo(float).tiny)
             mean_p = spu / safe[:, None]
             implied = spuu / safe[:, None, None] - np.einsum("ci,cj->cij", mean_p, mean_p)
@@ -610,7 +610,7 @@ def _refit_folds(est: Any, folds: Any) -> tuple | None:
     src = est.source_prior_
     moments = class_score_moments(class_score_sums(est.calibrate(source[0]), source[1], w_fold,
                                                    src))
-    return share, est._floored(moments, w_fold)  # as in memory (session 29)
+    return share, est._floored(moments, w_fold)  # as in memory
 
 
 def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: Any = None,
@@ -681,7 +681,7 @@ def estimate_multiclass_target(est: Any, estimator: Any, X: Any, sample_weight: 
                 and total > positive and total <= COUNT_TABLE_MAX_CASES
                 and getattr(est, "_src_fold", None) is None):
             # a count table (whole numbers, no common factor above 1, some above 1): its
-            # cases, as in memory (probwrap.shift._estimator._table_cases; since session 27)
+            # cases, as in memory (probwrap.shift._estimator._table_cases)
             n_eff = float(total)
         su, suu = parts.reduce(_score_sums, None, src)
         # the harm scale reads the posteriors that predict: the refit model's here

@@ -248,9 +248,9 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
         owner.clip_ = owner._clip_from_smallest(first.smallest)
         owner.__dict__.pop("_zero_floor", None)
         if first.smallest < 2.0 * DEFAULT_CLIP and k >= 3 and first.zeros.zeros > 0:
-            # as in memory (CalibrationWrapper._choose_clip, session 28): exact zeros beside
+            # as in memory (CalibrationWrapper._choose_clip): exact zeros beside
             # positive probabilities below 2e-12, half the Krichevsky-Trofimov floor of the
-            # rows, with the same warning (before session 29 this path kept 1e-12)
+            # rows, with the same warning (until 5 December 2026 this path kept 1e-12)
             owner.clip_ = owner._exact_zero_floor(
                 owner.clip_, k, first.zeros.zeros, first.zeros.rows, first.zeros.count_rows())
         owner._warn_zero_floor(stacklevel=6)
@@ -357,7 +357,7 @@ def fit_multiclass_calibration(owner: Any, X: Any, y: Any, sample_weight: Any, t
     if 0 < merged[0].n_rows <= kept_rows_limit():
         # a small set whose first pass did not bring its rows (`clip` given, or decision
         # values: there was none): one more pass, over at most KEPT_ROWS rows, brings them, and
-        # the map is the in-memory fit of the rows (before 4 December 2026, session 21: fitted
+        # the map is the in-memory fit of the rows (before 4 December 2026: fitted
         # from the one-vs-rest tallies with a BinnedFitWarning)
         if owner.clip is not None or owner.response_ != "predict_proba":
             held = _small_set_rows(owner, rows, estimator, classes, sample_weight is not None)

@@ -15,7 +15,7 @@ weights of each key over all blocks by a shuffle, never on the client:
   (:func:`probwrap.scale._spark.spark_key_tallies`).
 
 Only those numbers reach the client, so the check reads every row of a set of any size (before
-5 December 2026, session 25, sets beyond 20,000 rows were not judged).
+5 December 2026, sets beyond 20,000 rows were not judged).
 """
 
 from __future__ import annotations
@@ -42,7 +42,7 @@ def key_block(estimator: Any, scorer: Any, n_classes: int, by_features: bool,
     hashes and rows of each (``PriorShiftWrapper._labelled_row_tally``; with
     ``by_features``): the third entry counts the labelled rows with each row's features
     (:func:`probwrap.shift._repeats.labelled_rows_at`), the rule for rows selected on a
-    feature (since session 30 of 5 December 2026); None without it."""
+    feature (since 5 December 2026); None without it."""
     from ..shift._repeats import identity_row_keys, labelled_rows_at, row_key_pairs
 
     n = n_block_rows(Xb)
