@@ -57,7 +57,7 @@ class GroupCheck:
         The group's rows, positives and negatives counted as the function judges them: the sums
         of the weights read as row frequencies (weight 2 counts a row twice, so integer weights
         give the counts of the duplicated rows). Weights summing to less than the number of
-        rows of positive weight cannot be frequencies, nor (since session 29) can unequal
+        rows of positive weight cannot be frequencies, nor (since 5 December 2026) can unequal
         weights that are not all whole numbers (late-label IPCW or survey weights) or whole
         numbers sharing a factor above 1; these are first rescaled, over all rows together, to
         sum to Kish's effective size ``(sum w)^2 / sum w^2`` (with a ``WeightScaleWarning``;

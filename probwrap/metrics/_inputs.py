@@ -78,8 +78,8 @@ def _warn_unsorted_labels(labels: Any, idx: np.ndarray, p: np.ndarray) -> None:
     rows = np.arange(idx.shape[0])
     # floored at the log loss's default clip (float64 machine epsilon), as the metric scores
     # the rows: at the smallest positive float a probability of exactly 0 (a forest, nearest
-    # neighbours) weighed -708 and its spread hid the misreading (session 28: on ten bundled
-    # multiclass sets, misreadings missed that cost above 0.5 nats 43 -> 12 of 1,725, false
+    # neighbours) weighed -708 and its spread hid the misreading
+    # (benchmarks/multiclass_rules28.py: on ten bundled multiclass sets, misreadings missed that cost above 0.5 nats 43 -> 12 of 1,725, false
     # alarms 0 -> 0; docs/evidence/small_data_log.md)
     log_given = np.log(np.maximum(p[rows, idx], _LOG_FLOOR))
     log_sorted = np.log(np.maximum(p[rows, rank[idx]], _LOG_FLOOR))
@@ -261,7 +261,7 @@ def count_scale_weights(w: np.ndarray, what: str) -> np.ndarray:
     Whole-number weights without a common factor above 1 (a count table: weight 2 counts a row
     twice) are kept as given; so are unit weights. Weights that sum to less than the number of
     rows of positive weight (normalised to sum 1, or frequencies scaled by 1e-3) cannot be
-    frequencies, and since session 29 neither are weights that are not all whole numbers
+    frequencies, and since 5 December 2026 neither are weights that are not all whole numbers
     (importance weights such as the IPCW weights of
     :func:`probwrap.late_labels.labels_at_horizon`, survey weights) nor unequal whole numbers
     that all share a factor above 1 (counts multiplied by 1,000): all of these are rescaled
@@ -269,7 +269,7 @@ def count_scale_weights(w: np.ndarray, what: str) -> np.ndarray:
     :class:`~probwrap.calibration.WeightScaleWarning`, so that the p-value, or whether a group
     is judged, does not depend on the scale of the weights (docs/weights.md: scaling the
     weights must not change a choice). Equal weights become 1 each without a warning.
-    Before session 29 weights summing to at least the rows were counted as they stood, so
+    Until 5 December 2026 weights summing to at least the rows were counted as they stood, so
     ``hosmer_lemeshow_test``'s p-value went from 0.037 to 0.0 with every weight times 1,000 (a
     simulated draw of 400 rows), and ``calibration_by_group`` judged 0 of 118 broods of lme4's grouseticks at weight 1 and
     41 at weight 1,000, all without a word.
