@@ -24,10 +24,10 @@ was 2.07 times statsmodels' group-robust one, the bootstrap of whole districts 0
 are not known; weighted rows with identical forecasts and different labels then only earn a
 note that asks for ``cells``, and only when the weights are whole-number counts
 (:func:`probwrap._validation.whole_counts`) with at least half of them on such tied forecasts
-(:func:`tied_count_share`; since session 29: before, any unequal weights and one tied pair
+(:func:`tied_count_share`; since 5 December 2026: before, any unequal weights and one tied pair
 of labels raised it, on individual people too), split evenly over the labels in rows as
 expanded counts are (:func:`tied_label_row_balance`) or with the labels' weight apart from
-their rows (:func:`tied_row_weight_gap`; both since session 30: before, individual rows with
+their rows (:func:`tied_row_weight_gap`; both since 5 December 2026: before, individual rows with
 whole-number weights under a coarse model raised it).
 
 For binary outcomes and weights that are whole numbers (trial counts), the cells' Pearson
@@ -278,8 +278,8 @@ def tied_count_share(codes: np.ndarray, y_index: np.ndarray, w: np.ndarray | Non
     numbers. Individual rows whose model repeats some scores (boosting, naive Bayes on coarse
     columns) have a few percent of their weight there (openintro's acs12, 481 people,
     gradient boosting: 0.02), and survey, normalised or scaled weights are no counts at all
-    (docs/evidence/small_data_log.md, "The report's tied-forecast warning on individual rows
-    (session 29)").
+    (docs/evidence/small_data_log.md, the section on the report's tied-forecast warning on
+    individual rows).
 
     Examples
     --------
@@ -312,7 +312,8 @@ def tied_count_share(codes: np.ndarray, y_index: np.ndarray, w: np.ndarray | Non
 #: count tables of benchmarks/report_tied_forecast_note.py, coarse nearest-neighbour forecasts
 #: that merge many groups included), individual rows as many as the label's share (0.12-0.58
 #: where the note used to fire on them). Four fifths, between the two (common practice: a
-#: round number in the gap, not fitted); session 30.
+#: round number in the gap, not fitted); docs/evidence/small_data_log.md, the section on the
+#: tied-forecast note under coarse models.
 TIED_ROW_BALANCE = 0.8
 
 
@@ -362,7 +363,8 @@ def tied_label_row_balance(codes: np.ndarray, y_index: np.ndarray,
 #: label; individual rows' weights do not depend on the label. 5-NN forecasts of R's esoph and
 #: MASS's snails expanded: row balance 0.59 and 0.71, gap 0.20 and 0.21; the individual rows
 #: where the note used to fire: gap 0.013-0.079. Between the two (common practice: a round
-#: number in the gap, not fitted); session 30.
+#: number in the gap, not fitted); docs/evidence/small_data_log.md, the section on the
+#: tied-forecast note under coarse models.
 TIED_ROW_WEIGHT_GAP = 0.15
 
 
