@@ -32,7 +32,7 @@ class GroupReliabilityDisplay:
     ``calibration_by_group``'s rule (fewer than ``min_rows`` rows or ``min_events`` rows of a
     class, weights read as row frequencies; 100 and 10 by default, common practice) are drawn
     dashed and marked "too few rows to judge" rather than left out. More than eight groups
-    draw a ``UserWarning`` (since session 29): the eight colours then repeat, so curves of
+    draw a ``UserWarning`` (since 5 December 2026): the eight colours then repeat, so curves of
     different groups look alike.
 
     Parameters
@@ -158,7 +158,7 @@ class GroupReliabilityDisplay:
             sizes = [float(ww[y_arr[rows] == c].sum()) for c in classes]
             judged[key] = bool(eff[key] >= min_rows and min(sizes, default=0.0) >= min_events)
         if weightless:
-            # before session 29 one such group stopped the whole picture with an error about
+            # until 5 December 2026 one such group stopped the whole picture with an error about
             # all weights being zero
             warnings.warn(
                 f"GroupReliabilityDisplay: {len(weightless)} group(s) have weight 0 on every "

@@ -95,7 +95,7 @@ def _frequencies(sample_weight: Any, n: int, what: str) -> tuple[np.ndarray, boo
             WeightScaleWarning, stacklevel=4,
         )
         return counted, rescaled
-    # Since session 30, unequal weights follow the calibration tests' rule (session 29):
+    # Since 5 December 2026, unequal weights follow the calibration tests' rule:
     # weights that are not all whole numbers, or whole numbers sharing a factor above 1, are
     # relative (Kish's size, with a WeightScaleWarning), so the intervals do not move with the
     # scale of the weights. Before, weights drawn from 0.2-3 times 1,000 narrowed the report's
