@@ -60,7 +60,7 @@ class CutoffInterval:
         at 1.5-1.9 times the width. NaN otherwise. With unequal weights the rows between two
         cutoffs count as Kish's effective rows (since 4 December 2026; NaN before), except
         whole-number counts without a common factor (a count table), which count their cases:
-        the range of the rows repeated (since session 26). Intervals
+        the range of the rows repeated (since 5 December 2026). Intervals
         drawn from a tally (Dask or Spark fits through their tallies,
         ``probwrap.scale._bootstrap.tally_cutoff_interval``) compute it from the tally's rows
         per bin, or its weights and squared weights per bin; the command line's ``cutoff``
@@ -287,7 +287,7 @@ def _row_exact_range(rows: _SortedRows, y: np.ndarray, w: np.ndarray, matrix: np
         return _exact_range(rows, y[o].astype(float), matrix, level, tie_low, tie_high)
     if counts is not None:
         # a count table (whole-number weights): its cases, as the rows repeated by their counts
-        # (since session 26; before, Kish's size, a wider range than the repeated rows')
+        # (since 5 December 2026; before, Kish's size, a wider range than the repeated rows')
         c = counts.astype(float)
         return _exact_range(rows, (c * y)[o], matrix, level, tie_low, tie_high,
                             counts_sorted=c[o])
@@ -430,7 +430,8 @@ def cutoff_interval(
     incomplete beta functions they equal for whole counts: under the null the weighted share
     has the binomial share's mean and variance exactly; equal weights give back the counts.
     A count table (whole-number weights without a common factor, some above 1) counts its
-    cases instead: ``exact_low`` / ``exact_high`` are those of its rows repeated (session 26).
+    cases instead: ``exact_low`` / ``exact_high`` are those of its rows repeated (since
+    5 December 2026).
 
     The rows are sorted once; each bootstrap resample only re-weights them (a row drawn ``c``
     times gets ``c`` times its weight) and repeats the cumulative sums, so a resample costs O(n).
@@ -540,7 +541,7 @@ def cutoff_interval(
     sizes = wp if unit_of_row is None else np.bincount(unit_of_row, weights=wp,
                                                        minlength=n_units)
     effective = float(sizes.sum() ** 2 / np.dot(sizes, sizes))
-    # the exact range counts a count table's cases, as the rows repeated (session 26); the
+    # the exact range counts a count table's cases, as the rows repeated; the
     # bootstrap above resamples the table's rows, so its warning keeps their Kish size
     counts = _case_counts(sample_weight, present) if unit_of_row is None else None
     exact_low = exact_high = float("nan")

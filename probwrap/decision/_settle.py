@@ -122,7 +122,7 @@ def settle_cutoff(
     a false alarm (``t = 1/11``), 32 rows between the cutoffs without a single positive are
     needed before the plug-in cutoff is passed over.
 
-    Until session 21 the test was the normal approximation to the paired per-row difference of
+    Until 4 December 2026 the test was the normal approximation to the paired per-row difference of
     the two rules' costs (``excess`` over ``excess_se``, still reported): with a handful of
     positives among the rows between the cutoffs it rejected on a few negative rows and none
     of the rare, dear positive rows (docs/evidence/small_data_log.md, "cost rules on the newer sets").
