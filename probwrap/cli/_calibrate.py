@@ -139,7 +139,8 @@ def read_scores(frame: Any, column: str, path: str | Path, *, scale: str,
     elif (verb is not None and given.shape[0] >= 10 and given.min() >= 0.0
             and 1.0 < given.max() <= 100.0):
         # percentages passed as log-odds (the percentages message names --scale log-odds for
-        # real log-odds): no value below 0 means every row at least even odds (session 28)
+        # real log-odds): no value below 0 means every row at least even odds
+        # (since 5 December 2026)
         lo, hi = float(given.min()), float(given.max())
         warn_line(verb, (
             f"{path}: every value of column {plain(column)!r} lies in [0, 100] ({lo:.3g} to "

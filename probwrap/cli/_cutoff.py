@@ -181,7 +181,7 @@ def cutoff_summary(
         # why there is no exact range (None when there is one)
         "cutoff_exact_range_note": exact_note,
         # what the exact tests count: "rows", "cases" for whole-number weights (a count
-        # table's rows repeated by their counts, since session 26), or "kish_effective_rows"
+        # table's rows repeated by their counts, since 5 December 2026), or "kish_effective_rows"
         # for other unequal weights
         "cutoff_exact_range_counts": None if exact_note is not None else (
             "rows" if sample_weight is None

@@ -139,7 +139,8 @@ def _missing_words(col: Any) -> np.ndarray:
 
 def _check_missing_words(col: Any, labels: np.ndarray, worded: np.ndarray, where: str,
                          args: argparse.Namespace) -> None:
-    """A batch label such as "NA" became a batch of its own without a word (session 28).
+    """A batch label such as "NA" became a batch of its own without a word (until
+    5 December 2026).
 
     Among labels that are otherwise numbers or dates (weeks, days) it cannot be a batch: it is
     refused, its rows counted and the first named. Among words (sites, regions: "NA" may be
@@ -494,7 +495,7 @@ def _run(args: argparse.Namespace) -> int:
             ref_settings["reference_weight"] = library_weights(
                 ref_weights, ref_settings.get("reference_cells"))
         # a count table counts its cases (as the library does) unless cells are given, with
-        # --reference and (since session 28) with --source-prevalence
+        # --reference and (since 5 December 2026) with --source-prevalence
         cases = None if args.cell_column is not None else table_cases(weights)
         check_row_count("prevalence", proba.shape[0] if cases is None else int(cases),
                         args.unlabelled, "unlabelled rows" if cases is None else "unlabelled cases",

@@ -54,10 +54,10 @@ def prevalence_from_source(
     :meth:`probwrap.shift.PriorEstimator.estimate` does). Weights are relative: scaling them
     all changes nothing, except that a count table (:func:`table_cases`: whole numbers, some
     above 1, no common factor above 1, at most 1e6 cases) counts its cases, as the library
-    reads one since session 27: the test of no shift and the interval's floor count the total,
+    reads one since 5 December 2026: the test of no shift and the interval's floor count the total,
     and a resample draws Poisson(``c``) cases of a row of ``c`` cases, so the same cases one
-    row each give the same estimate, p-value and (in distribution) interval. Before session
-    28, vcd CoalMiners' 1,000 unlabelled miners on 18 cells counted as Kish's 13.7 rows:
+    row each give the same estimate, p-value and (in distribution) interval. Until 5 December
+    2026, vcd CoalMiners' 1,000 unlabelled miners on 18 cells counted as Kish's 13.7 rows:
     interval [0, 0.65] and p = 0.43 against [0.22, 0.30] and p = 2e-11 for the miners as rows.
 
     With ``edge_warning``, an estimate at the edge (within 1e-3 of the source prevalence's
@@ -317,12 +317,13 @@ def warn_repeated_scores(est: Any, proba: np.ndarray, ref_proba: np.ndarray, ref
     counts = (*labelled_repeat_counts(ref, y, 2), *labelled_clumps(ref, y, 2))
     if reference_folds is not None:
         # the user says how the reference was scored (a ten-fold reference read as five fold
-        # models warned on 3 of 6 draws of distinct TitanicSurvival rows; session 26)
+        # models warned on 3 of 6 draws of distinct TitanicSurvival rows;
+        # benchmarks/cli_repeat_reference.py)
         if reference_folds > 1:
             counts = within_model_counts(counts, reference_folds)
     elif scored_by_other_models(ref_proba, proba):
         # out-of-fold reference scores: they tie only within a fold, so their rate of ties is
-        # read over the pairs of one fold (before 5 December 2026, session 25, over all pairs:
+        # read over the pairs of one fold (before 5 December 2026, over all pairs:
         # a warning on every draw of coarse scores such as carData Cowles and TitanicSurvival)
         counts = within_model_counts(counts, REFERENCE_MODELS)
     found = repeats_of_rows(est, counts, two_columns(proba), None, sample_weight)
@@ -507,7 +508,7 @@ def library_weights(w: np.ndarray | None, cells: np.ndarray | None = None) -> np
     """The weights ``prevalence --reference`` passes to :class:`probwrap.shift.PriorEstimator`:
     a count table (:func:`probwrap._validation.whole_counts`: whole numbers, some above 1, no
     common factor above 1, at most 1e6 cases) unchanged, so that the estimator counts its cases
-    as it does for the same weights given in Python (since session 27), and the same cases one
+    as it does for the same weights given in Python (since 5 December 2026), and the same cases one
     row each give the same estimate, interval and p-value; other weights, and any weights with
     ``cells`` (the cells' clustering counts the units), :func:`kish_scaled`. Before, a count
     table was rescaled to Kish's size: vcd CoalMiners, 1,000 unlabelled miners on 16 cells,

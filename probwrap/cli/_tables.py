@@ -84,8 +84,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                 frame = frame.reset_index()
             if not all(isinstance(c, str) for c in frame.columns):
                 # names kept as numbers by pandas' metadata (a frame of predict_proba's
-                # columns 0 and 1): the options name columns by text (session 28: "no column
-                # '1' ...; the file has columns '0', '1'")
+                # columns 0 and 1): the options name columns by text (since 5 December 2026;
+                # before, "no column '1' ...; the file has columns '0', '1'")
                 frame.columns = [str(c) for c in frame.columns]
         else:
             exact = list(exact)
@@ -235,7 +235,7 @@ def _read_standard_input(name: Any, **options: Any) -> Any:
 PERCENT_SHARE = 0.01
 
 #: largest share of rows the labels beyond the two most common ones may hold for the message
-#: to name their rows (our rule; session 28): a rare third label is a typo or a code to fix
+#: to name their rows (our rule): a rare third label is a typo or a code to fix
 RARE_LABEL_SHARE = 0.05
 
 #: the words pandas reads as a missing value by default (its documented ``na_values`` list)
@@ -396,7 +396,7 @@ def _check_unnamed_tail(frame: Any, header: list[str], path: Path, sep: str) -> 
     Such a value is a row pushed one field to the right: in a comma-separated file ``1,234``
     (a thousands separator) or ``0,42`` (a decimal comma) makes two fields, and with the empty
     last column to take the spill the row had as many fields as the header, so it was read
-    without a word with ``1`` as its last named field (session 28).
+    without a word with ``1`` as its last named field (until 5 December 2026).
     """
     tail = len(header)
     while tail and not header[tail - 1].strip():
@@ -460,8 +460,8 @@ _COMPRESSED = {".gz": "gzip", ".bz2": "bz2", ".xz": "lzma", ".zip": "zip"}
 
 def _zip_extra(name: str) -> bool:
     """Whether a member of a .zip file is no table: a folder, or what macOS Finder's Compress
-    adds beside the file (``__MACOSX/._scores.csv``, ``.DS_Store``; session 28: such an
-    archive of one CSV file was refused as holding 2 files)."""
+    adds beside the file (``__MACOSX/._scores.csv``, ``.DS_Store``; until 5 December 2026 such
+    an archive of one CSV file was refused as holding 2 files)."""
     base = name.rstrip("/").rsplit("/", 1)[-1]
     return (name.endswith("/") or name.startswith("__MACOSX/") or base == ".DS_Store"
             or base.startswith("._"))
@@ -634,8 +634,8 @@ def _one_column_decimal_commas(handle: Any) -> bool:
     """Whether the rest of an open CSV file (after a header without a separator) is one column
     of numbers written with decimal commas: every line holding a comma is such a number, and
     at least one has three decimals or more (``0,1`` and ``1,0`` alone may be two whole-number
-    columns under a header naming one, refused as before). Before session 28 such a file (scores for ``prevalence``
-    saved from a German spreadsheet) was refused as "line 2 has 2 fields but the header has
+    columns under a header naming one, refused as before). Until 5 December 2026 such a file
+    (scores for ``prevalence`` saved from a German spreadsheet) was refused as "line 2 has 2 fields but the header has
     1", or, quoted, as "'0,42' is not a finite number"."""
     found = False
     while True:
@@ -724,7 +724,7 @@ def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
                     return "|", "."
                 else:
                     # one column: a spreadsheet in a decimal-comma locale writes 0,42 with no
-                    # separator to tell (session 28)
+                    # separator to tell (since 5 December 2026)
                     return (";", ",") if _one_column_decimal_commas(handle) else (",", ".")
             while True:
                 chunk = handle.read(_SCAN_CHUNK)
@@ -747,7 +747,7 @@ def _columns_listed(frame: Any) -> str:
     return ", ".join(names) + more + note
 
 
-#: a CSV file whose first line holds numbers only (session 28)
+#: a CSV file whose first line holds numbers only (since 5 December 2026)
 _NO_HEADER = ("its first line holds numbers only, so the file has no header line (the first "
               "row of data was read as the column names); add a first line naming the columns, "
               "such as score,label, and give those names to the options")
@@ -815,7 +815,7 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
     if series.dtype == object or pd.api.types.is_string_dtype(series.dtype):
         # (object under pandas 2, the string dtype under pandas 3)
         # a field of spaces only (a cell holding a typed space) is as empty as an empty
-        # field: missing, not "' ' is not a finite number" (session 28)
+        # field: missing, not "' ' is not a finite number" (since 5 December 2026)
         spaces = series.map(lambda v: isinstance(v, str) and v != "" and not v.strip())
         if spaces.any():
             series = series.mask(spaces.astype(bool))
@@ -891,7 +891,8 @@ _COMMA_GROUPS_DOT = re.compile(r"[-+]?[1-9]\d{0,2}(?:,\d{3})+\.\d+")
 
 
 #: the minus sign of typeset text (U+2212), which word processors, some statistics tools
-#: formatted output and text copied from web pages write for negative numbers (session 28)
+#: formatted output and text copied from web pages write for negative numbers
+#: (since 5 December 2026)
 _MINUS_SIGN = "\u2212"
 
 
@@ -1090,7 +1091,7 @@ def _marker_hint(series: Any, value: Any, path: str | Path) -> str:
 def _header_again_hint(frame: Any, series: Any, value: Any, path: str | Path) -> str:
     """After "'score' is not a finite number": the header line written again below the first
     (files joined with their headers, as ``cat`` or a copy-paste of two exports does), with how
-    many rows repeat it and which (session 28); "" for other values."""
+    many rows repeat it and which (since 5 December 2026); "" for other values."""
     if str(value).strip() != str(series.name).strip():
         return ""
     names = [str(c).strip() for c in frame.columns]
@@ -1111,7 +1112,7 @@ def _header_again_hint(frame: Any, series: Any, value: Any, path: str | Path) ->
 def _units_line_hint(frame: Any, series: Any, row: int, value: Any) -> str:
     """After "'(probability)' is not a finite number" on the first row: a line of units or
     notes under the header (every field of it text, the rows after it numbers), which some
-    exports write (session 28); "" otherwise."""
+    exports write (since 5 December 2026); "" otherwise."""
     if row != 0 or frame.shape[0] < 2 or str(value).strip() == str(series.name).strip():
         return ""
     fields = [v for v in frame.iloc[0].tolist()
@@ -1260,7 +1261,7 @@ def read_labels(
                 "different labels: write each label one way") if (
             distinct.shape[0] > 2 and len(tidy) < distinct.shape[0]) else ""
         if hint and len(tidy) == 2:
-            # 'benign' in 2 rows of 'Benign'/'Malignant': which rows (session 28)
+            # 'benign' in 2 rows of 'Benign'/'Malignant': which rows (since 5 December 2026)
             counts = np.array([np.count_nonzero(values == v) for v in distinct])
             order = np.argsort(-counts, kind="stable")
             rare = distinct[order[2:]]
