@@ -101,7 +101,8 @@ _ORDER_BASED_NAMES = ("binning", "isotonic", "venn_abers")
 #: benchmarks/crossfit_sweep.py at 100 and 300 training rows (550 cells of 61 bundled scikit-
 #: learn, statsmodels, R and econometrics sets, five base models): geometric mean test log loss
 #: 0.3-0.8 % lower, cells more than 5 % above scikit-learn's ``CalibratedClassifierCV`` sigmoid
-#: 58 -> 45, worst cell against the old choice 1.11x (docs/small_data.md, twelfth session).
+#: 58 -> 45, worst cell against the old choice 1.11x (docs/evidence/small_data_log.md, the section
+#: of 3 December 2026 on the cross-fitted path beside ``CalibratedClassifierCV``).
 _CROSSFIT_ORDER_MAPS_MAX_ROWS = 300
 
 #: When ``CalibrationWrapper`` cross-fits a binary model on at least this many labelled rows (of
@@ -116,7 +117,8 @@ _CROSSFIT_ORDER_MAPS_MAX_ROWS = 300
 #: 0.993 / 1.21 / 31 -> 0.989 / 1.16 / 19 (325 cells). Frozen models keep temperature first:
 #: there, with 20-200 rows, Platt first was worse on benchmarks/calibration_tiny.py's fresh sets
 #: (geometric mean 0.934 -> 0.937, draws above 1.05x the model's own 41 -> 44) and about even on
-#: its grid sets (docs/small_data.md, thirteenth session).
+#: its grid sets (docs/evidence/small_data_log.md, the section of 3 December 2026 on Platt before
+#: temperature).
 _PLATT_FIRST_CROSSFIT_MIN_ROWS = 100
 
 #: The multiclass counterpart: a model cross-fitted on at least this many rows of weight > 0
@@ -129,7 +131,8 @@ _PLATT_FIRST_CROSSFIT_MIN_ROWS = 100
 #: set groups: at 300 rows 80 cells, new over old 0.997 on average, worst 1.015, best 0.873
 #: (scikit-learn's digits, linear SVM margins); at 100 rows about as good on average but one
 #: cell 1.46x (statsmodels' modechoice, 100 of its 210 rows, linear SVM margins: eight
-#: parameters on four small classes), hence the bound (docs/small_data.md, fourteenth session).
+#: parameters on four small classes), hence the bound (docs/evidence/small_data_log.md, the section
+#: of 4 December 2026 on a fifth round on the data of published studies).
 _VECTOR_FIRST_CROSSFIT_MIN_ROWS = 300
 
 #: A binary model whose held-out rows hold less than this share (by weight) of the rarer class
@@ -167,7 +170,8 @@ _ONE_VS_REST_MIN_CLASS_ROWS = 8
 #: holds out of fold on these rows. lifelines' waltons (naive Bayes on two columns, 81 rows,
 #: fold models whose held-out probabilities point opposite ways): every map scored 0.57-0.70
 #: against the class shares' 0.51 and ``auto`` kept a temperature (test log loss 1.93 times
-#: scikit-learn's sigmoid; docs/small_data.md, twenty-first session).
+#: scikit-learn's sigmoid; docs/evidence/small_data_log.md, the section of 4 December 2026 on
+#: ``auto`` against the class shares on tiny sets).
 CLASS_SHARES = "class_shares"
 
 #: ... by more than this many standard errors of the paired difference (0: lower than every
@@ -185,8 +189,8 @@ _CLASS_SHARES_MARGIN_SE = 1.0
 #: predicts, spreads its scores; passing them over cost up to 2.7x on
 #: ``crossfit_sweep.py --only tiny``'s boosting and leaf-10 forest cells.) R's HSAUR::GHQ (11 groups of patients, k of n),
 #: naive Bayes: temperatures of 40-260 kept within a standard error of Platt's score, test log
-#: loss 1.2-1.85x scikit-learn's sigmoid. Measured in docs/small_data.md (twenty-second
-#: session, "tiny cases"); ``False`` switches the rule off.
+#: loss 1.2-1.85x scikit-learn's sigmoid. Measured in docs/evidence/small_data_log.md (the section
+#: of 4 December 2026 on ``auto`` on the named tiny cases); ``False`` switches the rule off.
 _PASS_OVER_TEMPERATURE_BELOW_SHARES = True
 
 #: Probabilities are floored at this value when scoring candidate maps by log loss, so that a map
@@ -205,7 +209,7 @@ _LOG_LOSS_FLOOR = 1e-15
 #: temperature (T = 1.12) kept within a standard error of Platt's lower score, mean probability
 #: 2.2 standard errors off, test log loss 0.676 against Platt's 0.604 and scikit-learn's
 #: sigmoid's 0.608. Measured on the binary cells of benchmarks/hunt21-23_sweep.py
-#: (docs/small_data.md, twenty-third session, "temperature without an intercept"); ``inf``
+#: (docs/evidence/small_data_log.md, the section on temperature without an intercept); ``inf``
 #: switches the rule off (and the one below, which widens it to any lower-scoring map).
 _BASE_RATE_SE = 1.0
 
@@ -213,7 +217,7 @@ _BASE_RATE_SE = 1.0
 #: the folds whichever map scored lower, and the one-standard-error rule goes on to the next map
 #: in its order (Platt scaling, beta scaling, ...), keeping the first within a standard error
 #: of the best: a temperature off the base rate is no simpler account of the rows than a map
-#: with an intercept that scored lower. (The twenty-third session's rule did so only when Platt
+#: with an intercept that scored lower. (The rule before 5 December 2026 did so only when Platt
 #: scaling scored lower and was itself within a standard error of the best map; ``False``
 #: restores that.) DAAG's nsw74psid1 (in a training programme, 7 %), Gaussian naive Bayes fitted
 #: on 300 rows and frozen, 150 calibration rows: beta scaling best on the folds (0.108), the
@@ -237,8 +241,8 @@ _PASS_OVER_TEMPERATURE_OFF_BASE_RATE = True
 #: cross-fitted on 100 rows (5 voters): beta 0.1985 on the folds, Platt 0.1989 (standard error
 #: 0.0003: passed over), temperature 0.1988 (standard error 0.0095: kept); test log loss 1.10x
 #: scikit-learn's sigmoid, beta 0.96x. Measured on hunt24_sweep.py's draws and 24 redraws of its
-#: named cells (docs/evidence/small_data_log.md, the section on auto on 40 cross-fitted rows); ``False``
-#: switches the rule off.
+#: named cells (docs/evidence/small_data_log.md, the section on auto on 40 cross-fitted rows);
+#: ``False`` switches the rule off.
 _PASS_OVER_TEMPERATURE_AFTER_PLATT = True
 
 #: More than two classes: the one-standard-error rule passes over temperature scaling when it is
@@ -252,8 +256,8 @@ _PASS_OVER_TEMPERATURE_AFTER_PLATT = True
 #: rarest), Gaussian naive Bayes cross-fitted on 40 rows: temperatures of 17-23 kept within a
 #: standard error of vector scaling in 12 of 20 draws, the rarest kind's mean probability
 #: 0.12-0.19 against its share 0.05; test log loss 1.241 against scikit-learn's sigmoid's
-#: 1.162 over the 20 draws (docs/evidence/small_data_log.md, the hunt26_sweep.py hunt). ``False`` switches
-#: the rule off.
+#: 1.162 over the 20 draws (docs/evidence/small_data_log.md, the hunt26_sweep.py hunt). ``False``
+#: switches the rule off.
 _PASS_OVER_TEMPERATURE_OFF_SHARES_MULTICLASS = True
 
 #: Two classes, a frozen model: the one-standard-error rule passes over Platt scaling when,
@@ -618,8 +622,9 @@ class _AutoChoice:
             scores, w = scores[cases], np.ones(cases.shape[0])
         else:
             # any other weights are relative for the choice: the candidates are fitted on them
-            # rescaled to Kish's size, so their scale moves no choice (since 5 December 2026; before,
-            # weights summing to at least the rows were counted as they stood, and x1,000 chose
+            # rescaled to Kish's size, so their scale moves no choice (since 5 December 2026;
+            # before, weights summing to at least the rows were counted as they stood, and x1,000
+            # chose
             # another map on wine and iris)
             w = choice_weights(w, ho)
         y = ho.y_index

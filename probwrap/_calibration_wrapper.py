@@ -65,9 +65,11 @@ _SEPARATED_MISRANKED_SHARE = 0.02
 #: (``TemperatureMap``: a gamma prior at the scale giving the scores a root-mean-square of one),
 #: not by errors the rows show; a model with very wide log-odds (naive Bayes, boosting) then
 #: keeps a temperature above 1 that still leaves most rows far more confident than the rows can
-#: check. DAAG's nsw74psidA, 30 cross-fitted rows (benchmarks/hunt30_sweep.py): naive Bayes (T = 5.6-7.9) and
-#: boosting (T = 3.3) kept by ``auto`` on held-out scores misranking 0-3.8 % of the pairs, test
-#: log loss 1.28-1.43x scikit-learn's sigmoid, quiet (docs/evidence/small_data_log.md).
+#: check. DAAG's nsw74psidA, 30 cross-fitted rows (benchmarks/hunt29_sweep.py): naive Bayes
+#: (T = 5.6-7.9) and boosting (T = 3.3) kept by ``auto`` on held-out scores misranking 0-3.8 % of
+#: the pairs, test log loss 1.28-1.43x scikit-learn's sigmoid, quiet
+#: (docs/evidence/small_data_log.md, the section on softening temperatures on separated small
+#: draws).
 _SOFTENED_MISRANKED_SHARE = 0.05
 
 #: One-vs-rest log-odds come from one logsumexp over all classes up to this many classes: the
@@ -658,8 +660,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         fold without the one Republican who voted no gave him a log-odds of +744 for yes and
         seven Democrats who voted yes -10 to -12, while the refitted model scores the same
         rows from -2 to +10; fitted on the raw scores, Platt's slope fell to 0.05 and the test
-        log loss was 0.505 against scikit-learn's sigmoid's 0.391 (docs/small_data.md,
-        twenty-second session, "Platt's fit within the refitted model's range").
+        log loss was 0.505 against scikit-learn's sigmoid's 0.391 (docs/evidence/small_data_log.md,
+        the section on Platt's fit within the refitted model's range, 4 December 2026).
         """
         if (ho.n_folds == 0 or len(self.classes_) != 2 or ho.response != "predict_proba"
                 or self.predict_with == "fold_models"):
@@ -897,8 +899,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         """Say so when weights that do not look like counts (not whole numbers, or whole
         numbers sharing a factor) sum to at least the rows, so the map counts them as rows and
         their scale moves ``predict_proba``, as ``PriorShiftWrapper.fit`` says for its own
-        calibration (since 5 December 2026: before, weights drawn from 0.2-3 times 1,000 moved a Platt
-        map's probabilities by up to 0.37 on wine without a word, while times 1e-3 warned).
+        calibration (since 5 December 2026: before, weights drawn from 0.2-3 times 1,000 moved a
+        Platt map's probabilities by up to 0.37 on wine without a word, while times 1e-3 warned).
         ``auto``'s warning about a shared factor already covers whole numbers there."""
         w = (getattr(ho, "row_weight", None) if getattr(ho, "table_row", None) is not None
              else ho.sample_weight)

@@ -56,7 +56,8 @@ RECALIBRATED_ANCHOR_MAX_ROWS = SMALL_HELDOUT_ROWS
 #: scikit-learn's). Measured with and without them on benchmarks/wide_data_sweep.py,
 #: fresh_data_sweep.py and small_data_sweep.py ``--only cost`` and crossfit_sweep.py ``--only
 #: cost``: without them as good or better on the mean everywhere, and the worst cell of the
-#: R and econometrics sets 3.86 -> 1.90 (docs/small_data.md, thirteenth session).
+#: R and econometrics sets 3.86 -> 1.90 (docs/evidence/small_data_log.md, the section of 3 December
+#: 2026 on the cost rules cross-fitted).
 _ANCHOR_CANDIDATES = ("identity", "temperature", "platt", "beta")
 
 #: On at most this many held-out rows (weight > 0) the anchor goes through Platt scaling in
@@ -78,8 +79,9 @@ PLATT_ANCHOR_MIN_CLASS_ROWS = 10
 #: (benchmarks/tuned_cost_few_rare_rows.py: not better, so not the default).
 _PLATT_SCORED_LOWER_MIN_CLASS_ROWS = PLATT_ANCHOR_MIN_CLASS_ROWS
 
-#: Since 5 December 2026: on at most ``PLATT_ANCHOR_MAX_ROWS`` held-out rows with at least this many of each
-#: class (``FEW_CLASS_ROWS``, Cochran 1954, below which the tuned fit already warns), the anchor
+#: Since 5 December 2026: on at most ``PLATT_ANCHOR_MAX_ROWS`` held-out rows with at least this many
+#: of each class (``FEW_CLASS_ROWS``, Cochran 1954, below which the tuned fit already warns), the
+#: anchor
 #: goes through Platt scaling wherever ``auto`` kept the model's own probabilities, Platt's fit
 #: on the held-out rows increases and it puts every held-out row on one side of the plug-in
 #: value (its plug-in rule flags all of them or none), whatever the folds' log losses
@@ -90,15 +92,17 @@ _PLATT_SCORED_LOWER_MIN_CLASS_ROWS = PLATT_ANCHOR_MIN_CLASS_ROWS
 _PLATT_WHEN_OWN_KEPT = True
 PLATT_DEFAULT_MIN_CLASS_ROWS = 5
 
-#: Since 5 December 2026: for a cross-fitted model (held-out probabilities from fold models, decisions from
-#: the model refitted on all rows) on at most ``PLATT_ANCHOR_MAX_ROWS`` held-out rows with at
+#: Since 5 December 2026: for a cross-fitted model (held-out probabilities from fold models,
+#: decisions from the model refitted on all rows) on at most ``PLATT_ANCHOR_MAX_ROWS`` held-out rows
+#: with at
 #: least ``PLATT_DEFAULT_MIN_CLASS_ROWS`` of each class, the anchor goes through Platt scaling
 #: wherever ``auto`` kept the model's own probabilities and Platt's fit increases, whether or
 #: not its plug-in rule splits the held-out rows (:func:`_platt_over_identity`). The fold
 #: models' log loss can say that *their* probabilities need no map; it says nothing about the
 #: refitted model's, and the cutoff is applied to the latter. False restores the rule of
-#: ``PLATT_DEFAULT_MIN_CLASS_ROWS`` alone (docs/decisions.md, "Tuned cost: changes for few positives"). Only while the held-out
-#: probabilities rank the classes less than outstandingly (``CROSSFIT_PLATT_MAX_AUC``).
+#: ``PLATT_DEFAULT_MIN_CLASS_ROWS`` alone (docs/decisions.md, "Tuned cost: changes for few
+#: positives"). Only while the held-out probabilities rank the classes less than outstandingly
+#: (``CROSSFIT_PLATT_MAX_AUC``).
 _PLATT_WHEN_CROSSFIT = True
 
 #: ... that is, while the (weighted) area under the ROC curve of the held-out probabilities is
@@ -262,8 +266,8 @@ def recalibrated_plugin_cutoff(
     return float(min(max(c, lo_p), hi_p)), cw.method_
 
 
-#: Since 5 December 2026: a tuned cutoff fitted from a Dask or Spark tally's bins (a set whose rows did
-#: not reach the client: more than ``KEPT_ROWS`` rows, or a Spark frame that changed between
+#: Since 5 December 2026: a tuned cutoff fitted from a Dask or Spark tally's bins (a set whose rows
+#: did not reach the client: more than ``KEPT_ROWS`` rows, or a Spark frame that changed between
 #: its two passes) gets the recalibrated anchor too, fitted on the tally's (bin, class) rows,
 #: when the tallied rows had whole-number weights (none given, or a count table) and were at
 #: most ``RECALIBRATED_ANCHOR_MAX_ROWS`` (:func:`_anchor_from_tally`). False restores the rule
@@ -338,8 +342,8 @@ def _platt_over_identity(cw: Any, p, y, w, t0: float, *, crossfit: bool = False)
     one standard error is narrow and the one-standard-error rule decides; below 5 rows of a
     class Platt's fit is noise (ACTG320, 3 deaths among 40 rows) and the fit warns.
 
-    Since 5 December 2026 (``crossfit=True``, ``_PLATT_WHEN_CROSSFIT``): for a cross-fitted model Platt
-    scaling replaces the own probabilities under the same bounds whenever its fit increases,
+    Since 5 December 2026 (``crossfit=True``, ``_PLATT_WHEN_CROSSFIT``): for a cross-fitted model
+    Platt scaling replaces the own probabilities under the same bounds whenever its fit increases,
     splitting the rows or not, while the held-out probabilities' area under the ROC curve is
     below ``CROSSFIT_PLATT_MAX_AUC``. The held-out probabilities then come from the fold models,
     and their log loss says whether *those* need a map, not whether the model refitted on all
@@ -384,8 +388,8 @@ def _platt_over_identity(cw: Any, p, y, w, t0: float, *, crossfit: bool = False)
     if not platt.calibrator_.slope_ > 0:
         return None  # a flat or decreasing fit orders no cutoff: the own probabilities stay
     if cross_kept:
-        # _PLATT_WHEN_CROSSFIT: a cross-fitted model's fold probabilities, not the refitted model's, were
-        # kept as they are; Platt's map, the regularised one, carries the plug-in value back
+        # _PLATT_WHEN_CROSSFIT: a cross-fitted model's fold probabilities, not the refitted model's,
+        # were kept as they are; Platt's map, the regularised one, carries the plug-in value back
         return platt
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -644,8 +648,8 @@ class _RuleFitting:
             )
             anchor, self.cutoff_anchor_map_ = plugin_cutoff(matrix), None
             # the anchor's map and the settling test read weights that are not a count table
-            # as relative (Kish's size), so their scale moves no cutoff (since 5 December 2026; before,
-            # weights summing to at least the rows counted as they stood: x1,000 moved the
+            # as relative (Kish's size), so their scale moves no cutoff (since 5 December 2026;
+            # before, weights summing to at least the rows counted as they stood: x1,000 moved the
             # cutoff on breast cancer from 0.20 to 0.28)
             w_choice = choice_weights(ho.sample_weight, ho)
             if getattr(ho, "from_tally", False) and _anchor_from_tally(self.tally_):

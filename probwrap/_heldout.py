@@ -425,9 +425,10 @@ def copied_row_cells(X: Any, cells: np.ndarray, min_columns: int = 2) -> np.ndar
     checked on, so the held-out predictions look better than the model is and the calibration
     fitted to them is too confident: 100 labelled rows of scikit-learn's breast cancer passed
     three times, gradient boosting, test log loss of PriorShiftWrapper's probabilities 1.58
-    times that of the rows passed once (geometric mean of 6 draws; repro in the eighteenth
-    session of docs/small_data.md). Rows that merely share common values — the same answers
-    to a few multiple-choice questions — are independent draws of the same features and stay
+    times that of the rows passed once (geometric mean of 6 draws; repro in
+    docs/evidence/small_data_log.md, the section of 4 December 2026 on models and data the sweeps
+    had not tried). Rows that merely share common values — the same answers to a few multiple-choice
+    questions — are independent draws of the same features and stay
     in the folds they were given, and so do rows that repeat because their measurements are
     whole numbers (days, years of age: lifelines' waltons data, a tree 1.37 times scikit-learn's
     sigmoid log loss with such rows kept together, 1.02 times with the folds as given).
@@ -624,8 +625,8 @@ def _whole_rows_beyond_chance(columns: list, cells: np.ndarray, weights: np.ndar
     folds put apart: each held-out case had its copies in the training part, the step maps
     learned their labels (binning's cross-validated log loss 0.449 against temperature's
     0.502) and ``auto`` chose binning, 0.679 on new rows against scikit-learn's sigmoid's 0.527
-    with the same weights (docs/evidence/small_data_log.md, the hunt28_sweep.py hunt). Fifteen such columns
-    agree by chance about once in 10^6 pairs; a tallied table of a few factors (Toxaemia's
+    with the same weights (docs/evidence/small_data_log.md, the hunt28_sweep.py hunt). Fifteen such
+    columns agree by chance about once in 10^6 pairs; a tallied table of a few factors (Toxaemia's
     class, smoking and urea) shares its cells as often as the factors' shares say.
     """
     return _whole_row_tie_ratio(columns, cells, weights) >= 10.0
@@ -1170,8 +1171,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             # routing on: only where the model receives the wrapper's own weights, as with
             # routing off (a model whose fit takes them, requesting them by their own name);
             # weights requested under another name, or reaching a Pipeline's steps, keep the
-            # rows as the folds' units, as routing off does (since 5 December 2026: before, routing on
-            # always kept the rows, so a count table gave another wrapper than routing off)
+            # rows as the folds' units, as routing off does (since 5 December 2026: before, routing
+            # on always kept the rows, so a count table gave another wrapper than routing off)
             return None
         cv = self.cv if self.cv is not None else 5
         if not isinstance(cv, numbers.Integral) or isinstance(cv, bool):

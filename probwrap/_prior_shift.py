@@ -129,7 +129,8 @@ def evidence_gate(
     would raise the rows' log loss by 2 % had their class shares not moved
     (:func:`~probwrap.shift._shift_tests.draw_capped_weight`, from ``null_harm_scale`` and
     ``null_move_ratio``); to ``2 % * (1 - labelled_row_share)`` where the estimate carries that
-    share (``adapt`` with a model refit on the labelled rows, rows in memory; since 5 December 2026).
+    share (``adapt`` with a model refit on the labelled rows, rows in memory; since 5 December
+    2026).
 
     Examples
     --------
@@ -295,7 +296,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``w``); where the evidence is weak (shift test p >= 0.10) and the move would cost such
         a draw more than 2 %, ``adapt`` holds ``w`` to what costs it 2 % and warns
         (:class:`~probwrap.shift.NoShiftHarmWarning`; docs/evidence/prior_shift_log.md, "One draw's harm
-        when nothing moved" and "Milder per-draw caps (twenty-third session)"; for a model
+        when nothing moved" and the section on milder per-draw caps; for a model
         refit here, rows in memory, to ``2 % * (1 - labelled_row_share)`` of
         ``prior_estimate_``, the rows' share also labelled, without a warning where the
         full move's cost is within 2 %: docs/evidence/prior_shift_log.md, the section on the
@@ -379,8 +380,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         the check with ``cells`` (it counts rows as independent), saying so. ``monitor`` runs
         it on every batch of rows in memory (fields ``feature_pvalue`` and
         ``feature_check`` of its table, one warning naming the batches), not on Dask or
-        Spark rows (said in a UserWarning). Measured in docs/evidence/prior_shift_log.md, the sections on
-        the feature check from adapt and the feature check in monitor.
+        Spark rows (said in a UserWarning). Measured in docs/evidence/prior_shift_log.md, the
+        sections on the feature check from adapt and the feature check in monitor.
 
     Attributes
     ----------
@@ -706,8 +707,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             rows. None: every row is its own unit (cells are never found on their own here,
             though the folds keep such rows together); a two-class count table then read as
             its cases (a frozen model) whose groups vary more than binomial draws a
-            ``UserWarning`` (docs/evidence/prior_shift_log.md, the section on count tables in adapt),
-            which says lack of fit of the map (or of the model) instead
+            ``UserWarning`` (docs/evidence/prior_shift_log.md, the section on count tables in
+            adapt), which says lack of fit of the map (or of the model) instead
             when a flexible map of the probabilities (or the table's own features beside it)
             fits the groups binomially.
         **fit_params : dict
@@ -764,8 +765,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             return self._finish_fit(est)
         self._cells_given = cells is not None  # (_split_table_cases)
         ho = self._fit_heldout(X, y, sample_weight, fit_params)
-        # a count table cross-fitted by its cases (since 5 December 2026): the held-out rows are runs of
-        # its cases (row, fold), weighted by their length; the table's own weights are read
+        # a count table cross-fitted by its cases (since 5 December 2026): the held-out rows are
+        # runs of its cases (row, fold), weighted by their length; the table's own weights are read
         # for the weight warnings
         table = getattr(ho, "table_row", None) is not None
         self._warn_few_class_rows(ho.class_row_counts(ho.sample_weight))
@@ -1024,8 +1025,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``adapt`` re-weights that same average (``PriorEstimator`` told so by
         ``_fold_point``; its estimate reads the fold models' own posteriors either way).
 
-        ``row_weight``: a count table cross-fitted by its cases (since 5 December 2026): the spreads are
-        taken over ``X``'s rows weighted by their counts, as over the rows repeated."""
+        ``row_weight``: a count table cross-fitted by its cases (since 5 December 2026): the spreads
+        are taken over ``X``'s rows weighted by their counts, as over the rows repeated."""
         from ._calibration_wrapper import _SPREAD_CHECK_MAX_ROWS
         from .calibration._logodds import clip_from_smallest, proba_to_log_proba
         from .shift._interval import fold_shares

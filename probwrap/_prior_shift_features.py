@@ -205,8 +205,8 @@ def with_feature_fields(table: np.ndarray, pvalues: np.ndarray, results: list) -
 
 def monitor_feature_checks(wrapper: Any, X: Any, table: np.ndarray, batches: Any,
                            batch_size: Any, sample_weight: Any, cells: Any) -> np.ndarray:
-    """``monitor`` with the feature check on (``feature_check_rows``; since 5 December 2026): each batch's
-    rows against the kept labelled rows re-weighted to the batch's maximum-likelihood shares
+    """``monitor`` with the feature check on (``feature_check_rows``; since 5 December 2026): each
+    batch's rows against the kept labelled rows re-weighted to the batch's maximum-likelihood shares
     (``ml_prior``), as ``adapt`` checks its rows (at most ``feature_check_rows`` of them, drawn
     with ``adapt``'s seed, so a batch gets ``adapt``'s result on the same rows). Returns the
     table with ``feature_pvalue`` and ``feature_check`` (:func:`with_feature_fields`); warns

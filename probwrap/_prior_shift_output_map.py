@@ -1,5 +1,5 @@
 """The map :class:`probwrap.PriorShiftWrapper` returns its probabilities through on small sets
-where the labelled rows contradict the model's confidence (the twenty-fourth session's rule).
+where the labelled rows contradict the model's confidence (a rule since 5 December 2026).
 
 ``BiasCorrectedScaling`` serves two purposes: the prior estimate (its class-wise biases make the
 mean calibrated posterior the class frequency, which EM needs) and the probabilities handed to
@@ -15,7 +15,7 @@ so that the choice draws nothing at random and the Dask and Spark fits, which br
 set's rows, make the in-memory choice. The prior estimate keeps ``BiasCorrectedScaling``. Measured in
 docs/evidence/prior_shift_log.md, "Before adapt on small labelled sets".
 
-Since the twenty-sixth session the same map also serves two more cases — a naive Bayes whose
+Since 5 December 2026 the same map also serves two more cases — a naive Bayes whose
 held-out probabilities are mostly exactly 0 or 1 (``"saturated"``), and every small set of more
 than two classes (``"more classes"``) — and a coarse grid of probabilities (a forest's) kept by
 the likelihood-ratio test gives way to the map where the map sharpens it by a scale of at
@@ -23,7 +23,7 @@ least :data:`GRID_SHARPEN_SCALE` (:func:`under_confident_grid`). Measured in
 docs/evidence/prior_shift_log.md, the section on the sharpening grid before adapt
 (benchmarks/hunt23_sweep.py).
 
-Since the twenty-seventh session the model's own probabilities kept by the test also give way
+Also since 5 December 2026 the model's own probabilities kept by the test give way
 to the map where the map softens them (scale below 1) and the labelled rows carry at least
 :data:`INFORMED_ROWS` rows' worth of information on the map's intercept
 (:func:`informed_softening`). Measured in docs/evidence/prior_shift_log.md, the section on softening
@@ -47,7 +47,7 @@ __all__ = ["GRID_SHARPEN_SCALE", "INFORMED_ROWS", "OUTPUT_MAP_CANDIDATES",
 
 #: The rule applies up to this many held-out rows (counted as for the map's prior on the scale,
 #: worth 5 rows: at least 5 % of the rows here). Measured on 20-600 rows (docs/prior_shift.md,
-#: "Before adapt on small labelled sets"): at 150 rows of the twenty-third session's hunt it
+#: "Before adapt on small labelled sets"): at 150 rows of benchmarks/hunt23_sweep.py's sets it
 #: raised the geometric mean (0.8386 -> 0.8411 over the sigmoid), at 20-100 it lowered it.
 OUTPUT_MAP_MAX_ROWS = 100
 
@@ -189,8 +189,9 @@ def under_confident_grid(proba: np.ndarray, w: np.ndarray, scale: float) -> bool
     none above 0 below the row bound ``b = 1 / (4 (N + 1))`` (a forest's multiples of
     ``1 / n_trees``, a nearest-neighbour vote) — and the map's scale at least
     :data:`GRID_SHARPEN_SCALE` although its prior holds it toward 1: the floored grid is
-    less confident than the labelled rows say. Measured in docs/evidence/prior_shift_log.md, the section
-    on the sharpening grid before adapt (DAAG's ais, a frozen forest on 40 rows: 1.42 -> 0.85x
+    less confident than the labelled rows say. Measured in docs/evidence/prior_shift_log.md, the
+    section on the sharpening grid before adapt (DAAG's ais, a frozen forest on 40 rows: 1.42 ->
+    0.85x
     scikit-learn's sigmoid)."""
     from .calibration._base import count_weights
 

@@ -265,8 +265,8 @@ def table_dispersion(
     tail with ``G - 2`` degrees of freedom. With one row probability per group this is
     statsmodels' ``GLM(Binomial).pearson_chi2 / df_resid`` on the groups (tested).
 
-    ``flexible=True`` (since 5 December 2026) replaces the Platt map by a binomial GLM on a natural cubic
-    spline of the log-odds with :data:`FLEXIBLE_MAP_KNOTS` knots at quantiles of the distinct
+    ``flexible=True`` (since 5 December 2026) replaces the Platt map by a binomial GLM on a natural
+    cubic spline of the log-odds with :data:`FLEXIBLE_MAP_KNOTS` knots at quantiles of the distinct
     log-odds (one rate per distinct probability when there are no more of them than knots),
     and divides by ``G`` minus its parameters. A Platt map's dispersion is large both when the
     groups vary more than binomial (overdispersion) and when the map's shape is wrong (lack

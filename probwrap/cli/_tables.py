@@ -635,8 +635,8 @@ def _one_column_decimal_commas(handle: Any) -> bool:
     of numbers written with decimal commas: every line holding a comma is such a number, and
     at least one has three decimals or more (``0,1`` and ``1,0`` alone may be two whole-number
     columns under a header naming one, refused as before). Until 5 December 2026 such a file
-    (scores for ``prevalence`` saved from a German spreadsheet) was refused as "line 2 has 2 fields but the header has
-    1", or, quoted, as "'0,42' is not a finite number"."""
+    (scores for ``prevalence`` saved from a German spreadsheet) was refused as "line 2 has 2 fields
+    but the header has 1", or, quoted, as "'0,42' is not a finite number"."""
     found = False
     while True:
         chunk = handle.read(_SCAN_CHUNK)

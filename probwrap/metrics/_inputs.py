@@ -79,8 +79,8 @@ def _warn_unsorted_labels(labels: Any, idx: np.ndarray, p: np.ndarray) -> None:
     # floored at the log loss's default clip (float64 machine epsilon), as the metric scores
     # the rows: at the smallest positive float a probability of exactly 0 (a forest, nearest
     # neighbours) weighed -708 and its spread hid the misreading
-    # (benchmarks/multiclass_rules28.py: on ten bundled multiclass sets, misreadings missed that cost above 0.5 nats 43 -> 12 of 1,725, false
-    # alarms 0 -> 0; docs/evidence/small_data_log.md)
+    # (benchmarks/multiclass_rules28.py: on ten bundled multiclass sets, misreadings missed that
+    # cost above 0.5 nats 43 -> 12 of 1,725, false alarms 0 -> 0; docs/evidence/small_data_log.md)
     log_given = np.log(np.maximum(p[rows, idx], _LOG_FLOOR))
     log_sorted = np.log(np.maximum(p[rows, rank[idx]], _LOG_FLOOR))
     given, by_sort = float(np.mean(log_given)), float(np.mean(log_sorted))

@@ -270,7 +270,7 @@ def draw_capped_weight(harm_scale: float | None, ratio: float | None,
     ``w' = sqrt(ratio**2 + limit / (scale * T)) - ratio``.
 
     ``PriorShiftWrapper.adapt`` applies it where the shift test's p-value is at least 0.10
-    (docs/evidence/prior_shift_log.md, "Milder per-draw caps (twenty-third session)"): on such evidence
+    (docs/evidence/prior_shift_log.md, the section on milder per-draw caps): on such evidence
     the rows may well not have moved, and a move then costs them the first-order term of
     :func:`null_move_ratio` that ``max_harm`` (an average over draws) does not carry.
 
