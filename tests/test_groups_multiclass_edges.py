@@ -9,7 +9,9 @@ Tried as a user would (session 30) on scikit-learn's bundled digits and wine dat
   "all rows (overall)" where a group is named "all", and its notes "all rows".
 * a group that never holds a class (digits: every 0 moved to a group of its own): the
   multiclass report called a group of 1,748 weighted rows "too small to judge (1748 rows, 0 of
-  its rarest class)"; it now says the class is missing.
+  its rarest class)"; it then said the class is missing, and (5 December 2026) judges the group
+  on its overall scores and names the class it is not judged on
+  (tests/test_groups_multiclass_judging.py).
 * ``GroupReliabilityDisplay`` of class probabilities with more groups than colours sent the
   reader to ``calibration_by_group``'s table, which refuses class probabilities; it now names the
   multiclass report's by-group table.
@@ -99,15 +101,20 @@ def test_group_without_a_class_is_said_so_and_every_number_matches_the_reference
             np.mean([_binned(pp[:, j], (yy == j).astype(float), ww) for j in range(k)]),
             rel=1e-10, abs=1e-12)
     by = {c.group: c for c in checks.groups}
-    assert by["faint"].weight > 1000 and not by["faint"].judged
+    # a large group missing a class is judged on its overall scores, and not on the class it
+    # lacks (before 5 December 2026: "faint: not judged: no row of class(es) 0 (1616 rows; a
+    # group is judged with 10 rows of every class)"; earlier still "too small to judge")
+    assert by["faint"].weight > 1000 and by["faint"].judged
+    assert by["faint"].classes_not_judged == ("0: no row",)
     faint = next(x for x in checks.notes if x.startswith("faint:"))
-    # was "faint: too small to judge (1748 rows, 0 of its rarest class)"
-    assert faint == (f"faint: not judged: no row of class(es) 0 ({by['faint'].weight:.0f} rows; "
-                     "a group is judged with 10 rows of every class)")
-    assert next(x for x in checks.notes if x.startswith("zeros:")).startswith(
-        "zeros: not judged: no row of class(es) 1, 2, 3, 4, 5, ... (")
+    assert faint.startswith("faint: judged on its overall scores, but not on class(es) 0: no row")
+    assert by["zeros"].judged and by["zeros"].classes_judged == ()
+    assert by["zeros"].classes_not_judged[:2] == ("0: 0 rows of the other classes, below 10",
+                                                  "1: no row")
+    assert not by["lone"].judged
+    assert any(x.startswith("lone: too small to judge (") for x in checks.notes)
     row = re.search(r'<tr data-group="faint">(.*?)</tr>', page).group(1)
-    assert "not judged: a class missing" in row and "too small" not in row
+    assert "overall scores only" in row and "0: no row" in row and "too small" not in row
 
 
 def test_a_group_named_all_is_not_the_overall_row(wine):

@@ -55,18 +55,27 @@ def test_group_rows_are_the_report_metrics_on_each_group(three):
         np.testing.assert_allclose(c.action_shares, np.bincount(acts, minlength=3) / rows.sum(),
                                    rtol=1e-12)
         assert c.weight == rows.sum()
-    # the light parcels hold fewer than 10 broken ones: listed, marked, left out of the gaps
-    assert np.sum((size == "light") & (d.target == 2)) < 10
-    assert not by["light"].judged and by["medium"].judged and by["heavy"].judged
-    assert checks.groups[-1].group == "light"
-    assert all("light" not in (g.highest, g.lowest) for g in checks.gaps)
-    assert any(n.startswith("light: too small to judge") for n in checks.notes)
+    # the light parcels hold fewer than 10 broken ones (7 of 613): judged on their overall
+    # scores, not on the broken class, which is said; left out of the classwise and class-2 gaps
+    # (before 5 December 2026 the whole group was "too small to judge" and left out of every gap)
+    n_broken = int(np.sum((size == "light") & (d.target == 2)))
+    assert n_broken < 10 and np.sum(size == "light") >= 100
+    assert by["light"].judged and by["medium"].judged and by["heavy"].judged
+    assert by["light"].classes_not_judged == (f"2: {n_broken} rows, below 10",)
+    assert by["medium"].classes_not_judged == () == by["heavy"].classes_not_judged
+    for g in [*checks.gaps, *checks.class_gaps]:
+        if g.metric in ("classwise_error", "error of class 2"):
+            assert "light" not in (g.highest, g.lowest)
+    assert {g.metric for g in checks.class_gaps} == {f"error of class {j}" for j in range(3)}
+    assert any("light" in (g.highest, g.lowest) for g in checks.gaps)
+    assert any(n.startswith("light: judged on its overall scores, but not on class(es) 2")
+               for n in checks.notes)
     # the overall row is the report's rule cost
     assert checks.overall.mean_cost == pytest.approx(rule.mean_cost, rel=1e-12)
     # on the page: a section in the nav, a row per group, the small group marked
     assert 'href="#by-group"' in page
     light = re.search(r'<tr data-group="light">(.*?)</tr>', page).group(1)
-    assert "too small to judge" in light
+    assert "overall scores only" in light and f"2: {n_broken} rows, below 10" in light
     assert "share hold" in page
 
 

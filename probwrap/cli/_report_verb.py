@@ -571,13 +571,19 @@ def group_summary(content: Any, summary: dict) -> str:
         "groups": [row(c) for c in checks.groups],
         "overall": row(checks.overall),
         "gaps": [row(g) for g in checks.gaps],
+        # three or more classes: each class's one-vs-rest error between the groups judged on it
+        **({"class_gaps": [row(g) for g in checks.class_gaps]}
+           if getattr(checks, "class_gaps", None) else {}),
         "min_rows": float(checks.min_rows), "min_events": float(checks.min_events),
         "notes": list(checks.notes),
     }
     if getattr(checks, "action_names", None) is not None:  # the order of action_shares
         summary["groups"]["action_names"] = [str(a) for a in checks.action_names]
     judged = sum(bool(c.judged) for c in checks.groups)
-    return f", {len(checks.groups)} groups ({judged} judged)"
+    # three or more classes: groups judged on their overall scores but not on every class
+    partial = sum(bool(c.judged and getattr(c, "classes_not_judged", ())) for c in checks.groups)
+    return (f", {len(checks.groups)} groups ({judged} judged"
+            + (f", {partial} on their overall scores only" if partial else "") + ")")
 
 
 def cell_summary(content: Any, summary: dict) -> str:

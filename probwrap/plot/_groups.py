@@ -31,7 +31,9 @@ class GroupReliabilityDisplay:
     same bins, the number the multiclass report's by-group table shows. Groups not judged by
     ``calibration_by_group``'s rule (fewer than ``min_rows`` rows or ``min_events`` rows of a
     class, weights read as row frequencies; 100 and 10 by default, common practice) are drawn
-    dashed and marked "too few rows to judge" rather than left out. More than eight groups
+    dashed and marked "too few rows to judge" rather than left out. With three or more classes
+    the curve is judged as the multiclass table judges a group's overall scores: with
+    ``min_rows`` rows, whatever rows of each class it holds. More than eight groups
     draw a ``UserWarning`` (since 5 December 2026): the eight colours then repeat, so curves of
     different groups look alike.
 
@@ -102,7 +104,9 @@ class GroupReliabilityDisplay:
             :func:`probwrap.metrics.calibration_by_group`.
         min_rows, min_events : float, default=100, 10
             Groups with fewer rows, or fewer rows of a class, are drawn dashed and marked
-            (``calibration_by_group``'s rule).
+            (``calibration_by_group``'s rule); with three or more classes, groups with fewer
+            rows (``min_events`` is not used: the multiclass table's rule for a group's
+            overall scores).
         ax : matplotlib Axes, optional
 
         Returns
@@ -133,6 +137,10 @@ class GroupReliabilityDisplay:
             classes = [] if labels is None else list(np.asarray(labels))
         else:
             classes = list(np.unique(y_arr[w > 0]))
+        # three or more classes: the top-label curve is one of the group's overall quantities,
+        # judged with min_rows rows whatever its classes (the multiclass report's rule); before,
+        # one class short of min_events left it dashed however many rows the group had
+        overall_only = p.ndim == 2 and len(classes) > 2
         found, first = np.unique(g, return_index=True)
         tables, errors, eff, judged = {}, {}, {}, {}
         weightless = []
@@ -156,7 +164,8 @@ class GroupReliabilityDisplay:
                 errors[key] = float(expected_calibration_error(y_arr[rows], p[rows], **kw))
             eff[key] = float(ww.sum())
             sizes = [float(ww[y_arr[rows] == c].sum()) for c in classes]
-            judged[key] = bool(eff[key] >= min_rows and min(sizes, default=0.0) >= min_events)
+            judged[key] = bool(eff[key] >= min_rows and (
+                overall_only or min(sizes, default=0.0) >= min_events))
         if weightless:
             # until 5 December 2026 one such group stopped the whole picture with an error about
             # all weights being zero
