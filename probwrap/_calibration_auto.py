@@ -336,7 +336,12 @@ class _AutoChoice:
         ``_SELECTION_MAX_ROWS`` rows when there are more (and the folds are not given as indices).
         The chosen map is always fitted on all rows."""
         y = ho.y_index
-        n = y.shape[0]
+        # drawn among the rows of positive weight (since 5 December 2026): rows of weight 0
+        # carry no information, and took places in the draw before
+        w = np.asarray(ho.sample_weight)
+        base = (np.flatnonzero(w > 0) if w.shape == y.shape and np.any(w > 0) and np.any(w == 0)
+                else np.arange(y.shape[0]))
+        n = base.shape[0]
         own_folds = ho.n_folds >= 2 or isinstance(
             self.cv if self.cv is not None else 5, numbers.Integral
         )
@@ -345,8 +350,8 @@ class _AutoChoice:
         rng = check_random_state(self.random_state)
         frac = _SELECTION_MAX_ROWS / n
         keep = []
-        for k in np.unique(y):
-            rows = np.flatnonzero(y == k)
+        for k in np.unique(y[base]):
+            rows = base[y[base] == k]
             take = min(rows.shape[0], max(int(round(frac * rows.shape[0])), 50))
             keep.append(rng.choice(rows, take, replace=False))
         return np.sort(np.concatenate(keep))
@@ -361,8 +366,13 @@ class _AutoChoice:
         # among the weighted rows only, so that they are the folds of those rows alone (before,
         # the zero rows took places in the stratified draw and moved the choice against the
         # same rows dropped: breast cancer, 16 of 160 rows at 0, benchmarks/weight_scale_hunt.py)
+        # (since 5 December 2026 a splitter object given as `cv` draws among them too, as
+        # the cross-fitting does; folds given as index pairs keep the zero rows, which weigh
+        # nothing in the maps fitted and scored there)
+        drawn = isinstance(cv, numbers.Integral) or (
+            hasattr(cv, "split") and getattr(ho, "table_rows", None) is None)
         weighted = None
-        if (isinstance(cv, numbers.Integral) and weight is not None
+        if (drawn and weight is not None
                 and weight.shape[0] == y.shape[0] and np.any(weight > 0)
                 and not np.all(weight > 0)):
             weighted = np.flatnonzero(weight > 0)
@@ -401,6 +411,16 @@ class _AutoChoice:
                 fold[test] = i
         if np.any(fold < 0):
             raise ValueError("`cv` must partition the rows to score the candidate maps.")
+        if (not drawn and weight is not None and weight.shape[0] == y.shape[0]
+                and np.any(weight > 0)):
+            empty = [i for i in range(int(fold.max()) + 1) if not np.any(weight[fold == i] > 0)]
+            if empty:
+                raise ValueError(
+                    f"Fold {empty[0] + 1} of {int(fold.max()) + 1} of `cv` holds only rows of "
+                    "`sample_weight` 0: rows of weight 0 carry no information, so the candidate "
+                    "maps could not be scored there. Give some of its rows a positive weight, "
+                    "or pass folds that each hold weighted rows."
+                )
         if weighted is not None:
             # the zero rows, spread over the folds in turn, weigh nothing in any of them
             full = np.arange(y_all.shape[0]) % int(fold.max() + 1)

@@ -10,6 +10,7 @@ from typing import Any
 
 import numpy as np
 from sklearn.base import clone
+from sklearn.utils import _safe_indexing, indexable
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import column_or_1d
 
@@ -28,6 +29,8 @@ from ._heldout import (
     check_fitted,
     check_rows_match,
     is_frozen,
+    params_of_rows,
+    rows_for_models,
     warn_weightless_classes,
 )
 from ._predictions import _answers
@@ -355,6 +358,13 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         if any(k.endswith("sample_weight") for k in est_params):
             _warn_weights_too_small_for_model(sw, self.estimator, type(self).__name__,
                                               stacklevel=3)
+        # rows of weight 0 carry no information: the model is the one fitted on the other rows
+        # (before 5 December 2026 a model without sample_weight took them at weight 1 here)
+        rows = rows_for_models(self, self.estimator, classes, y_index, sw, est_params)
+        if rows is not None:
+            X = _safe_indexing(indexable(X)[0], rows)
+            est_params = params_of_rows(est_params, rows, y_arr.shape[0])
+            y_arr = y_arr[rows]
         try:
             estimator = clone(self.estimator).fit(X, y_arr, **est_params)
         except ValueError as exc:  # as the held-out strategies report a fold that fails

@@ -353,6 +353,14 @@ def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray,
     # equal weights (of any size: 1, 2, 1/n) say nothing about counts; they leave the folds as
     # without weights, so rescaling every weight cannot move them
     sw = None if sample_weight is None else np.asarray(sample_weight, dtype=float).ravel()
+    if sw is not None and np.any(sw > 0) and np.any(sw == 0):
+        # rows of weight 0 carry no information: their labels part no cell, and 0/1 weights
+        # are equal weights on the rows they keep (since 5 December 2026)
+        keep = sw > 0
+        sw = sw[keep]
+        cells_kept = True
+    else:
+        keep, cells_kept = None, False
     weighted = sw is not None and sw.size > 0 and bool(np.any(sw != sw[0]))
     n = y_index.shape[0]
     cells = feature_cell_index(X, n) if index is _HASH_ROWS else index
@@ -363,8 +371,12 @@ def feature_cells(X: Any, sample_weight: np.ndarray | None, y_index: np.ndarray,
         lo = np.full(n_cells, np.iinfo(np.intp).max)
         hi = np.full(n_cells, -1)
         y_index = np.asarray(y_index, dtype=np.intp)
-        np.minimum.at(lo, cells, y_index)
-        np.maximum.at(hi, cells, y_index)
+        if cells_kept:
+            np.minimum.at(lo, cells[keep], y_index[keep])
+            np.maximum.at(hi, cells[keep], y_index[keep])
+        else:
+            np.minimum.at(lo, cells, y_index)
+            np.maximum.at(hi, cells, y_index)
         if np.any(hi > lo):
             return cells
     try:
@@ -746,6 +758,56 @@ def warn_weightless_classes(owner: Any, classes: np.ndarray, y_index: np.ndarray
     )
 
 
+def rows_for_models(owner: Any, estimator: Any, classes: np.ndarray, y_index: np.ndarray,
+                    sample_weight: np.ndarray | None, est_params: dict) -> np.ndarray | None:
+    """The rows every model fitted inside a wrapper is fitted on (each fold model's training
+    part and the final refit): ``None`` for all rows, else the indices of the rows kept.
+
+    Rows of weight 0 carry no information (docs/weights.md), so they are left out and the
+    models are those fitted on the other rows, for a model that reads ``sample_weight`` and
+    one that does not (which would otherwise count them as rows of weight 1). The rows of a
+    class whose every row weighs 0 stay, at weight 0, where the model receives the weights: the
+    class then stays among the models' classes, as it stays among the wrapper's
+    (:func:`warn_weightless_classes` names it). A model that takes no weights could keep such a
+    class only by learning it from those rows, so that is refused, naming the class.
+    """
+    if sample_weight is None:
+        return None
+    sw = np.asarray(sample_weight)
+    if not np.any(sw == 0) or not np.any(sw > 0):
+        return None
+    y_index = np.asarray(y_index, dtype=np.intp)
+    weighted = np.bincount(y_index[sw > 0], minlength=classes.shape[0])
+    lone = weighted[y_index] == 0
+    if lone.any() and not any(str(key).endswith("sample_weight") for key in est_params):
+        names = ", ".join(repr(plain(classes[j]))
+                          for j in np.unique(y_index[lone])[:5])
+        raise ValueError(
+            f"{type(owner).__name__}: every row of class(es) {names} in `y` has `sample_weight` "
+            f"0, and `estimator` ({type(estimator).__name__}) takes no sample_weight, so the "
+            "models fitted here could keep the class only by learning it from rows that weigh "
+            "nothing. Give those rows a positive weight, leave the class's rows out of X and y, "
+            "or pass a model that accepts sample_weight."
+        )
+    return np.flatnonzero((sw > 0) | lone)
+
+
+def params_of_rows(params: dict, rows: np.ndarray, n: int) -> dict:
+    """``params`` with every row-wise value (one entry per row of the ``n``) taken at ``rows``."""
+    return {key: (_safe_indexing(value, rows) if row_count(value) == n else value)
+            for key, value in params.items()}
+
+
+def _positive_part(sample_weight: Any) -> Any:
+    """The positive weights of ``sample_weight`` (all of them where none is positive, or where
+    they cannot be read as numbers): the weights of the rows a model fitted here receives."""
+    try:
+        w = np.asarray(sample_weight, dtype=float).ravel()
+    except (TypeError, ValueError):
+        return sample_weight
+    return w[w > 0] if np.any(w > 0) else w
+
+
 def is_frozen(estimator: Any) -> bool:
     """Whether ``estimator`` is an already-fitted :class:`~sklearn.frozen.FrozenEstimator`."""
     return isinstance(estimator, FrozenEstimator)
@@ -860,11 +922,13 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             by_step = any(str(key).endswith("__sample_weight") for key in params)
             if has_fit_parameter(self.estimator, "sample_weight"):
                 params["sample_weight"] = sample_weight
-            elif _all_equal(sample_weight):
+            elif _all_equal(_positive_part(sample_weight)):
                 # weights of 1 (or all equal below 1, which count one row each) weight nothing:
                 # the model fitted without them is the model they ask for, so nothing is lost
                 # and there is nothing to warn about (on an ordinary scaler + logistic
                 # regression Pipeline every fit with weights of 1 warned)
+                # (rows of weight 0 beside them are left out of every model fitted here:
+                # rows_for_models)
                 pass
             elif by_step:
                 pass
@@ -1038,18 +1102,23 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             if table is not None:
                 return self._fit_heldout_table(X, y_arr, y_index, classes, sw, est_params,
                                                response, *table, index=index)
+            # rows of weight 0 take part in no model fitted here (docs/weights.md)
+            fit_rows = rows_for_models(self, self.estimator, classes, y_index, sw, est_params)
             splitter = self._make_splitter(y_arr)
-            with warnings.catch_warnings():
-                # Tiny classes trigger a warning from StratifiedKFold; they are handled below.
-                warnings.filterwarnings("ignore", message="The least populated class")
-                try:
-                    splits = list(splitter.split(X, y_arr, **split_params))
-                except ValueError as exc:
-                    if not isinstance(self.cv if self.cv is not None else 5, numbers.Integral):
-                        raise
-                    raise ValueError(self._too_many_folds(y_index, classes, exc)) from exc
-            splits = self._splits_of_weighted_rows(splitter, splits, y_index, classes, sw,
-                                                   split_params)
+            if fit_rows is not None:
+                splits = self._splits_of_weighted_rows(X, y_arr, splitter, y_index, classes,
+                                                       sw, split_params, fit_rows)
+            else:
+                with warnings.catch_warnings():
+                    # Tiny classes trigger a warning from StratifiedKFold; handled below.
+                    warnings.filterwarnings("ignore", message="The least populated class")
+                    try:
+                        splits = list(splitter.split(X, y_arr, **split_params))
+                    except ValueError as exc:
+                        if not isinstance(self.cv if self.cv is not None else 5,
+                                          numbers.Integral):
+                            raise
+                        raise ValueError(self._too_many_folds(y_index, classes, exc)) from exc
             fold = np.full(n, -1, dtype=int)
             for i, (_, test) in enumerate(splits):
                 if np.any(fold[test] >= 0):
@@ -1066,6 +1135,8 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
             cells = feature_cells(X, sw, y_index, index=index)
             if cells is not None:
                 splits, fold = self._splits_keeping_cells(splits, fold, cells, y_index)
+                if fit_rows is not None:  # (the cells' folds are rebuilt from all rows)
+                    splits = [(train[np.isin(train, fit_rows)], test) for train, test in splits]
             n_folds = len(splits)
             n_classes = classes.shape[0]
             short = [i for i, (train, _) in enumerate(splits)
@@ -1101,7 +1172,14 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     "sklearn.frozen.FrozenEstimator so nothing is refitted here. "
                     f"The estimator said: {exc}"
                 ) from exc
-            estimator = clone(self.estimator).fit(X, y_arr, **est_params)
+            if fit_rows is None:
+                estimator = clone(self.estimator).fit(X, y_arr, **est_params)
+            else:
+                # the final model on the rows the fold models were fitted on (before 5 December
+                # 2026 a model without sample_weight took the zero rows here at weight 1)
+                estimator = clone(self.estimator).fit(
+                    _safe_indexing(indexable(X)[0], fit_rows), y_arr[fit_rows],
+                    **params_of_rows(est_params, fit_rows, n))
 
         if sw is not None:
             weighted = np.unique(np.asarray(y_index)[sw > 0])
@@ -1308,37 +1386,112 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                                  fit_remedy=fit_remedy,
                                  features=getattr(ho, "table_features", None))
 
-    def _splits_of_weighted_rows(self, splitter: Any, splits: list, y_index: np.ndarray,
-                                 classes: np.ndarray, sw: np.ndarray | None,
-                                 split_params: dict) -> list:
-        """With ``cv`` a number of folds and some rows of weight 0: the folds of the weighted
-        rows alone, each zero row held out in one fold (in turn) and in no training part.
+    def _splits_of_weighted_rows(self, X: Any, y: np.ndarray, splitter: Any,
+                                 y_index: np.ndarray, classes: np.ndarray, sw: np.ndarray,
+                                 split_params: dict, fit_rows: np.ndarray) -> list:
+        """The folds with some rows of weight 0: no zero row in a training part (but the rows
+        of a class weighted 0 throughout, ``fit_rows``, which stay in every one at weight 0).
 
-        Rows of weight 0 take part in nothing fitted (docs/weights.md), so the folds, the fold
-        models and the held-out predictions of the weighted rows are those of the same rows
-        with the zero rows dropped. Before, the zero rows took places in the stratified draw
-        and moved the weighted rows to other folds (benchmarks/weight_scale_hunt.py). Kept as
-        they are where a class has only rows of weight 0 (they stay in the fold models'
-        training parts, so the class stays among the models' classes), with groups given to
-        the splitter, or where the weighted rows cannot be split so.
+        Rows of weight 0 carry no information (docs/weights.md), so the weighted rows' folds,
+        the fold models and their held-out predictions are those of the other rows alone:
+
+        * ``cv`` a number, or a splitter object (with ``groups`` or other split parameters, each
+          taken at the weighted rows): the splitter draws among the weighted rows, and each
+          zero row is held out in one fold, its group's where the group has weighted rows,
+          else in turn (until the afternoon of 5 December 2026 only a number of folds without
+          a class weighted 0 throughout drew so; a splitter object, a group splitter and such a
+          class drew over all rows, and the zero rows moved the weighted rows to other folds:
+          benchmarks/zero_weight_folds_check.py);
+        * folds given as (train, test) pairs: the zero rows leave every training part and keep
+          their place in the test parts, where they weigh nothing. A fold that is then left
+          without a weighted held-out row, or whose training part keeps weighted rows of
+          fewer than two classes, is refused, naming the fold.
         """
         cv = self.cv if self.cv is not None else 5
-        if (sw is None or not isinstance(cv, numbers.Integral) or split_params
-                or not np.any(sw == 0) or not np.any(sw > 0)):
-            return splits
+        n = y.shape[0]
         pos = np.flatnonzero(sw > 0)
-        if np.unique(y_index[pos]).shape[0] < classes.shape[0]:
-            return splits
         zero = np.flatnonzero(sw == 0)
-        try:
-            with warnings.catch_warnings():
-                warnings.filterwarnings("ignore", message="The least populated class")
-                sub = list(splitter.split(np.zeros((pos.shape[0], 1)), y_index[pos]))
-        except ValueError:
-            return splits
+        keep = np.zeros(n, dtype=bool)
+        keep[fit_rows] = True
+        lone = np.flatnonzero(keep & (sw == 0))  # rows of classes weighted 0 throughout
+        number = isinstance(cv, numbers.Integral)
+        if not number and not hasattr(cv, "split"):
+            return self._given_folds_without_zero_rows(X, y, splitter, y_index, sw,
+                                                       split_params, keep)
+        with warnings.catch_warnings():
+            warnings.filterwarnings("ignore", message="The least populated class")
+            try:
+                if number:
+                    sub = list(splitter.split(np.zeros((pos.shape[0], 1)), y_index[pos]))
+                else:
+                    sub = list(splitter.split(_safe_indexing(indexable(X)[0], pos), y[pos],
+                                              **params_of_rows(split_params, pos, n)))
+            except ValueError as exc:
+                if not number:
+                    raise
+                raise ValueError(
+                    self._too_many_folds(y_index[pos], classes, exc)
+                    + " (Rows of `sample_weight` 0 are not counted: they join no fold model.)"
+                ) from exc
         k = len(sub)
-        return [(pos[train], np.sort(np.concatenate([pos[test], zero[i::k]])))
+        zero_fold = np.arange(zero.shape[0]) % max(k, 1)
+        groups = split_params.get("groups")
+        if groups is not None and row_count(groups) == n and k:
+            # a zero row joins its group's fold; zero rows of groups without weighted rows are
+            # held out group by group, in turn
+            try:
+                _, code = np.unique(np.asarray(groups), return_inverse=True)
+            except TypeError:  # values that cannot be sorted: in turn, row by row
+                code = None
+            if code is not None:
+                code = code.ravel()
+                group_fold = np.full(int(code.max()) + 1, -1)
+                for i, (_, test) in enumerate(sub):
+                    group_fold[code[pos[test]]] = i
+                zg = code[zero]
+                seen = group_fold[zg] >= 0
+                _, unseen = np.unique(zg[~seen], return_inverse=True)
+                zero_fold = np.where(seen, group_fold[zg], 0)
+                zero_fold[~seen] = unseen.ravel() % k
+        return [(np.sort(np.concatenate([pos[train], lone])),
+                 np.sort(np.concatenate([pos[test], zero[zero_fold == i]])))
                 for i, (train, test) in enumerate(sub)]
+
+    def _given_folds_without_zero_rows(self, X: Any, y: np.ndarray, splitter: Any,
+                                       y_index: np.ndarray, sw: np.ndarray,
+                                       split_params: dict, keep: np.ndarray) -> list:
+        """Folds given as (train, test) pairs without the rows of weight 0 in their training
+        parts (see :meth:`_splits_of_weighted_rows`); refused where a fold has no weighted
+        held-out row, or a training part weighted rows of fewer than two classes."""
+        splits = list(splitter.split(X, y, **split_params))
+        k = len(splits)
+        out = []
+        for i, (train, test) in enumerate(splits):
+            train, test = np.asarray(train), np.asarray(test)
+            if train.dtype == bool:
+                train = np.flatnonzero(train)
+            if test.dtype == bool:
+                test = np.flatnonzero(test)
+            train = train[keep[train]]
+            if not np.any(sw[test] > 0):
+                raise ValueError(
+                    f"Fold {i + 1} of {k} of `cv` holds only rows of `sample_weight` 0 in its "
+                    "test part: rows of weight 0 carry no information, so nothing would be "
+                    "checked there. Give some of its rows a positive weight, or pass folds "
+                    "whose test parts each hold weighted rows."
+                )
+            held = np.unique(y_index[train][sw[train] > 0])
+            if held.shape[0] < 2:
+                raise ValueError(
+                    f"The training part of fold {i + 1} of {k} of `cv` keeps rows of "
+                    f"{'no class' if held.shape[0] == 0 else 'only one class'} with a positive "
+                    "`sample_weight` (rows of weight 0 carry no information and are left out "
+                    "of the fold models), so no model can be fitted there to tell the classes "
+                    "apart. Pass folds whose training parts hold weighted rows of at least two "
+                    "classes."
+                )
+            out.append((train, test))
+        return out
 
     def _splits_keeping_cells(
         self, splits: list, fold: np.ndarray, cells: np.ndarray, y_index: np.ndarray
