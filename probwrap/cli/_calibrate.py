@@ -29,6 +29,7 @@ from ._common import (
     add_weight_flag,
     check_ranking,
     check_row_count,
+    check_scores_vary,
     clean,
     is_standard_stream,
     require,
@@ -279,6 +280,9 @@ def _fit(args: argparse.Namespace) -> int:
                         counted="the choice between maps (--method auto) counts")
         check_ranking("calibrate", scores[closed], y[closed], labels, args.scores,
                       sample_weight=None if weights is None else weights[closed])
+        check_scores_vary("calibrate", scores[closed], args.scores, args.score_column,
+                          "the map can learn one probability for that score and nothing about "
+                          "any other score it is applied to")
         counts = np.bincount(y[closed], minlength=2)
         if args.method == "auto" and counts.min() < 2:
             raise DataError(

@@ -23,6 +23,7 @@ from .._validation import plain
 __all__ = [
     "DataError", "MissingExtraError", "OPTIONAL_MODULES", "require", "shown", "clean",
     "TABLE_SUFFIXES", "table_kind", "one_line", "warn_line", "check_ranking", "check_row_count",
+    "check_scores_vary",
     "FEW_ROWS", "MIN_RESAMPLES", "add_positive_label_flag", "add_format_flag",
     "add_resamples_flag", "whole_number", "add_seed_flag", "MAX_SEED", "add_weight_flag", "add_weight_dots_flag",
     "weight_summary", "not_a_number", "FREQUENCY_WEIGHT_LIMIT", "StandardStream",
@@ -280,6 +281,31 @@ def check_ranking(
             "score column is the positive class's score",
         )
     return auc
+
+
+def check_scores_vary(verb: str, scores: np.ndarray, path: str | Path, column: str,
+                      consequence: str, sample_weight: np.ndarray | None = None) -> bool:
+    """Warn when every row (of weight > 0) holds the same score; returns True when they vary.
+
+    Scores that do not vary tell no row from another: a cutoff then acts on every row or on
+    none, a map gives one probability, a test of ranking or calibration slope has nothing to
+    read. The verbs still give their numbers (they are what those rows support), and the
+    warning names the file, the column and the one value, so that an export that wrote a
+    default value (or rounded every score to one number) is not read without a word.
+    ``consequence``: what the verb can then say, in its own words.
+    """
+    s = np.asarray(scores, dtype=float)
+    if sample_weight is not None:
+        s = s[np.asarray(sample_weight, dtype=float) > 0]
+    if s.size < 2 or np.ptp(s) > 0:
+        return True
+    warn_line(verb, (
+        f"{path}: column {shown(column)} holds one score, {float(s[0]):.6g}, in all {s.size} "
+        f"rows{'' if sample_weight is None else ' of weight above 0'}: scores that do not vary "
+        f"cannot tell the rows apart, so {consequence}; check that the column holds the "
+        "model's scores (an export that wrote a default value, or rounded every score to one "
+        "number?)"))
+    return False
 
 
 def check_row_count(verb: str, n_rows: int, path: str | Path, what: str = "rows",

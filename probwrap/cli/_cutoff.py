@@ -26,6 +26,7 @@ from ._common import (
     add_weight_flag,
     check_ranking,
     check_row_count,
+    check_scores_vary,
     not_a_number,
     percent_hint,
     shown,
@@ -394,8 +395,12 @@ def _text(out: dict[str, Any], path: str) -> str:
             why = (f"{target}: these rows do not show at 5 % that another costs less"
                    if kept["kept_recalibrated_bayes_cutoff"] else
                    f"nearest {target} among those not shown at 5 % to cost more")
+            # a cutoff below 0 on probabilities (a recalibration that puts every row above the
+            # Bayes cutoff, as with scores that are all one value) acts on every row: said so
+            every = (" (below every probability: act on every row)"
+                     if out["score_scale"] == "proba" and kept["cutoff"] < 0 else "")
             lines.append(
-                f"  settled cutoff        {cutoff_text(kept['cutoff'])}   "
+                f"  settled cutoff        {cutoff_text(kept['cutoff'])}{every}   "
                 f"cost {kept['expected_cost']:.6g}"
                 f"   ({why})"
             )
@@ -433,6 +438,9 @@ def _run(args: argparse.Namespace) -> int:
                         counted="the bootstrap interval and the exact-test range count")
         check_ranking("cutoff", scores[closed], y[closed], labels, args.scores,
                       sample_weight=None if weights is None else weights[closed])
+        check_scores_vary("cutoff", scores[closed], args.scores, args.score_column,
+                          "a cutoff can only act on every row or on none, and the cutoff and "
+                          "its range say no more than which of the two costs less")
         costs = {"tp": args.cost_tp, "fp": args.cost_fp, "fn": args.cost_fn, "tn": args.cost_tn}
         stages.start("searching the cutoff and its interval")
         with warnings.catch_warnings(record=True) as caught:

@@ -45,6 +45,7 @@ from ._common import (
     add_weight_dots_flag,
     check_ranking,
     check_row_count,
+    check_scores_vary,
     is_standard_stream,
     not_a_number,
     percent_hint,
@@ -515,6 +516,14 @@ def _run(args: argparse.Namespace) -> int:
             check_ranking("prevalence", ref_scores[judged], ref_y[judged], labels,
                           args.reference,
                           sample_weight=None if ref_weights is None else ref_weights[judged])
+            check_scores_vary("prevalence", ref_scores[judged], args.reference,
+                              ref_column,
+                              "the reference cannot show how the two classes' scores differ, "
+                              "and the estimate has nothing to tell the classes apart by")
+        check_scores_vary("prevalence", proba, args.unlabelled, args.score_column,
+                          "the estimate reads that one value alone, and no mix of the two "
+                          "classes can be seen in it",
+                          sample_weight=weights if args.cell_column is None else None)
         stages.start(names[1])
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")

@@ -23,6 +23,7 @@ from ._common import (
     add_weight_flag,
     check_ranking,
     check_row_count,
+    check_scores_vary,
     clean,
     not_a_number,
     percent_hint,
@@ -718,6 +719,9 @@ def _handler(args: argparse.Namespace) -> int:
                     "series of batches and cannot judge a drift from one"))
         check_ranking("report", p[closed], y[closed], labels, args.scores,
                       sample_weight=None if given is None else given[closed])
+        check_scores_vary("report", p[closed], args.scores, args.score_column,
+                          "the page's ranking, calibration slope and cutoff say no more than "
+                          "whether acting on every row or on none costs less")
         if args.scale == "log-odds":  # the report reads the log-odds as given where it can
             extra_scale = {"score_scale": "log-odds"}
         else:
@@ -759,7 +763,9 @@ def _handler(args: argparse.Namespace) -> int:
             # the page recommends another cutoff than the least-cost one (the settled or Bayes
             # cutoff, a capacity or a new prevalence): say both, the recommendation first
             summary["recommended_cutoff"] = float(rec.cutoff)
-            line += (f", recommended cutoff {cutoff_text(rec.cutoff, '.4f')} ({rec.name}; "
+            every = (" (below every probability: act on every row)" if rec.cutoff < 0
+                     and getattr(args, "scale", None) != "log-odds" else "")
+            line += (f", recommended cutoff {cutoff_text(rec.cutoff, '.4f')}{every} ({rec.name}; "
                      f"least-cost cutoff {cutoff_text(content.chosen_cutoff, '.4f')} on these rows)")
     if content.chosen_cutoff is not None and getattr(args, "scale", None) == "percent":
         # the cutoffs are probabilities; the file's column holds percentages

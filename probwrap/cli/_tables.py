@@ -53,7 +53,7 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     columns (``NA``, ``None``, ``000123`` and ``12345678901234567890`` stay as written), and
     decimal commas stay commas (:func:`numeric_column` reads them); a Parquet file's index,
     when it has a named or non-default one, becomes an ordinary column so that it is written
-    out too. The columns in ``exact`` still read empty fields and pandas' usual missing-value
+    out too (a named index is a column in every reading, so that the options can name it). The columns in ``exact`` still read empty fields and pandas' usual missing-value
     words as missing.
 
     ``text``: columns read from CSV as the text they hold, nothing taken for a missing value
@@ -80,7 +80,11 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     try:
         if table_kind(path) == "Parquet":
             frame = pd.read_parquet(path)
-            if as_text and not _plain_index(frame.index, pd):
+            if not _plain_index(frame.index, pd) and (
+                    as_text or any(name is not None for name in frame.index.names)):
+                # a column a script made the index (df.set_index("score").to_parquet(...))
+                # is stored as the index and read back as one: it is a column of the file
+                # ("no column 'score'; the file has columns 'id', 'y'" before)
                 frame = frame.reset_index()
             if not all(isinstance(c, str) for c in frame.columns):
                 # names kept as numbers by pandas' metadata (a frame of predict_proba's
