@@ -62,18 +62,21 @@ def run(*argv) -> tuple[object, str, str]:
 
 
 def variants(b: pd.DataFrame) -> dict:
-    """name -> (writer(path), file suffix, --score-column, --positive-label)."""
+    """name -> (writer(path), file suffix, --score-column, --positive-label, more options)."""
     yn = b.assign(y=np.where(b.y == 1, "yes", "no"))
     v = {}
 
-    def add(name, writer, ext=".csv", sc="score", pos=None):
-        v[name] = (writer, ext, sc, pos)
+    def add(name, writer, ext=".csv", sc="score", pos=None, extra=()):
+        v[name] = (writer, ext, sc, pos, extra)
 
     add("semicolon, decimal commas", lambda p: b.to_csv(p, sep=";", decimal=",", index=False))
     add("BOM, CRLF", lambda p: b.to_csv(p, index=False, encoding="utf-8-sig",
                                         lineterminator="\r\n"))
     add("Latin-1 header", lambda p: b.rename(columns={"score": "Probabilité"}).to_csv(
         p, index=False, encoding="latin-1"), sc="Probabilité")
+    add("Latin-1 header, --encoding latin-1", lambda p: b.rename(
+        columns={"score": "Probabilité"}).to_csv(p, index=False, encoding="latin-1"),
+        sc="Probabilité", extra=("--encoding", "latin-1"))
     add("every field quoted", lambda p: b.to_csv(p, index=False, quoting=csv.QUOTE_ALL))
     for tok in ["NA", "", "?", "."]:
         def missing(p, tok=tok, col="score"):
@@ -130,20 +133,20 @@ def main(quick: bool = False) -> None:
         "--label-column", "y", "--method", "platt", "--out", folder / "plain-map.json")
     print("| file | verb | exit | result or first message line |")
     print("| --- | --- | --- | --- |")
-    for i, (name, (writer, ext, sc, pos)) in enumerate(variants(b).items()):
+    for i, (name, (writer, ext, sc, pos, extra)) in enumerate(variants(b).items()):
         path = folder / f"f{i}{ext}"
         writer(path)
         posa = () if pos is None else ("--positive-label", pos)
-        cols = ("--score-column", sc, "--label-column", "y", *posa)
+        cols = ("--score-column", sc, "--label-column", "y", *posa, *extra)
         runs = {
             "cutoff": run("cutoff", "--scores", path, *cols, *costs, "--resamples", 0,
                           "--format", "json"),
             "calibrate fit": run("calibrate", "fit", "--scores", path, *cols, "--method",
                                  "platt", "--out", folder / f"m{i}.json"),
             "calibrate apply": run("calibrate", "apply", "--map", folder / "plain-map.json",
-                                   "--scores", path, "--score-column", sc,
+                                   "--scores", path, "--score-column", sc, *extra,
                                    "--out", folder / "new folder" / f"a{i}.csv"),
-            "prevalence": run("prevalence", "--unlabelled", path, "--score-column", sc,
+            "prevalence": run("prevalence", "--unlabelled", path, "--score-column", sc, *extra,
                               "--source-prevalence", 0.6, "--resamples", 0, "--format",
                               "json"),
         }

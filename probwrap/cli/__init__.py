@@ -354,6 +354,9 @@ def _run(argv: list[str] | None) -> int:
         previous = None
     try:
         set_running_verb(str(args.verb))
+        from ._tables import set_csv_encoding
+
+        set_csv_encoding(getattr(args, "encoding", None))
         return int(args.func(args) or 0)
     except DataError as exc:
         print(f"probwrap {args.verb}: error: {clean(' '.join(str(exc).split()))}",
@@ -385,6 +388,10 @@ def _run(argv: list[str] | None) -> int:
     finally:
         if previous is not None:
             signal.signal(signal.SIGTERM, previous)
+        if getattr(args, "encoding", None) is not None:
+            from ._tables import set_csv_encoding
+
+            set_csv_encoding(None)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -24,6 +24,7 @@ from ._common import (
     NAMED_ROWS,
     DataError,
     StandardStream,
+    add_encoding_flag,
     add_positive_label_flag,
     add_seed_flag,
     add_weight_flag,
@@ -556,6 +557,7 @@ def register(subparsers: Any) -> None:
                      "--event-column, --horizon)")
     add_positive_label_flag(fit)
     add_scale_flag(fit)
+    add_encoding_flag(fit)
     fit.add_argument(
         "--method", choices=("auto", *METHODS), default="auto",
         help="calibration map; auto (default) keeps the simplest map whose cross-validated log "
@@ -594,6 +596,7 @@ def register(subparsers: Any) -> None:
         help_extra="; needed only when the map file does not record the scale it was fitted on "
         "(it must agree when it does)",
     )
+    add_encoding_flag(apply)
     apply.add_argument(
         "--output-column", default="calibrated_probability", metavar="NAME",
         help="name of the added column (default calibrated_probability)",

@@ -26,6 +26,7 @@ __all__ = [
     "check_scores_vary",
     "FEW_ROWS", "MIN_RESAMPLES", "add_positive_label_flag", "add_format_flag",
     "add_resamples_flag", "whole_number", "add_seed_flag", "MAX_SEED", "add_weight_flag", "add_weight_dots_flag",
+    "add_encoding_flag",
     "weight_summary", "not_a_number", "FREQUENCY_WEIGHT_LIMIT", "StandardStream",
     "is_standard_stream", "INPUT_OPTIONS", "NAMED_ROWS", "rows_text", "missing_count_text",
     "percent_hint",
@@ -432,6 +433,33 @@ def add_weight_flag(parser: argparse.ArgumentParser) -> None:
         "stands for); every number is then weighted by them",
     )
     add_weight_dots_flag(parser)
+
+
+def _encoding(text: str) -> str:
+    """An argparse type: the name of a text encoding Python knows (``cp1252``, ``latin-1``)."""
+    import codecs
+
+    try:
+        info = codecs.lookup(text)
+    except LookupError:
+        raise argparse.ArgumentTypeError(
+            f"{shown(text)} is not an encoding Python knows: give one such as cp1252 (Windows, "
+            "Western Europe), latin-1, cp1250 (Central Europe) or utf-16") from None
+    if not getattr(info, "_is_text_encoding", True):
+        raise argparse.ArgumentTypeError(f"{shown(text)} is not a text encoding")
+    return text
+
+
+def add_encoding_flag(parser: argparse.ArgumentParser) -> None:
+    """The ``--encoding`` flag: the text encoding of the command's CSV files (pandas' own
+    ``encoding`` option), for files a spreadsheet saved in its code page rather than UTF-8."""
+    parser.add_argument(
+        "--encoding", type=_encoding, default=None, metavar="NAME",
+        help="text encoding of the CSV files read (default UTF-8; a file that starts with a "
+        "byte-order mark is read by it), e.g. cp1252 for a CSV file a Windows spreadsheet "
+        "saved in Western Europe; calibrate apply writes such a file back as UTF-8 with a "
+        "byte-order mark",
+    )
 
 
 def add_weight_dots_flag(parser: argparse.ArgumentParser) -> None:

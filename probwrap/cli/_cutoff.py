@@ -19,6 +19,7 @@ from .._validation import cutoff_text, cutoff_texts, power_of_two_unit
 from ._calibrate import add_scale_flag, probability_scale, read_scores, report_warnings
 from ._common import (
     DataError,
+    add_encoding_flag,
     add_format_flag,
     add_positive_label_flag,
     add_resamples_flag,
@@ -496,6 +497,7 @@ def register(subparsers: Any) -> None:
                         "--horizon)")
     add_positive_label_flag(parser)
     add_scale_flag(parser)
+    add_encoding_flag(parser)
     for key, what in (
         ("fp", "acting on a negative row (e.g. an inspection that finds nothing)"),
         ("fn", "not acting on a positive row (e.g. a damaged delivery)"),

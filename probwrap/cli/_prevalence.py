@@ -38,6 +38,7 @@ from .._validation import plain
 from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     DataError,
+    add_encoding_flag,
     add_format_flag,
     add_positive_label_flag,
     add_resamples_flag,
@@ -616,6 +617,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--unlabelled", required=True, metavar="FILE", help="CSV or Parquet")
     parser.add_argument("--score-column", required=True, metavar="C", help="column of scores")
     add_scale_flag(parser)
+    add_encoding_flag(parser)
     source = parser.add_mutually_exclusive_group(required=True)
     source.add_argument(
         "--source-prevalence", type=_prevalence, metavar="P",

@@ -16,6 +16,7 @@ from ._calibrate import add_scale_flag, read_scores, report_warnings
 from ._common import (
     MIN_RESAMPLES,
     DataError,
+    add_encoding_flag,
     add_format_flag,
     add_positive_label_flag,
     add_resamples_flag,
@@ -96,6 +97,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         "--horizon)")
     add_positive_label_flag(parser)
     add_scale_flag(parser, help_extra=" (binary files; --class-columns take probabilities)")
+    add_encoding_flag(parser)
     parser.add_argument("--cost-matrix", metavar="ROWS",
                         help="with --class-columns: costs, one row per class (in column order) "
                         "separated by ';', one entry per action separated by ',', e.g. "

@@ -117,7 +117,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                 # how the file was written, so that a table written back (calibrate apply)
                 # opens the same way in the same spreadsheet
                 frame.attrs["csv_dialect"] = {"sep": sep, "decimal": decimal,
-                                              "bom": _starts_with_bom(path),
+                                              "bom": (_starts_with_bom(path)
+                                                      or chosen_encoding(encoding)),
                                               "newline": _line_end(path, encoding),
                                               "sep_line": _has_sep_line(path, encoding)}
             elif decimal == ",":  # columns read as text keep their decimal commas: make dots
@@ -157,6 +158,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     except pd.errors.EmptyDataError:
         raise DataError(f"{path}: the file is empty") from None
     except UnicodeDecodeError as exc:
+        if _CHOSEN_ENCODING[0] is not None and not exc.encoding.lower().startswith("utf-8"):
+            raise DataError(_not_chosen(path, exc, _CHOSEN_ENCODING[0])) from None
         raise DataError(_not_utf8(path, exc)) from None
     except (MemoryError, KeyboardInterrupt):
         raise
@@ -493,6 +496,29 @@ def _open_bytes(path: Path) -> Any:
     return importlib.import_module(kind).open(path, "rb")
 
 
+def _not_chosen(path: Path, exc: UnicodeDecodeError, encoding: str) -> str:
+    """The message for a CSV file that the encoding given with ``--encoding`` cannot read: the
+    first byte it has no character for, and its line (for encodings of one byte per
+    character; pandas decodes in blocks, so the error's own position is within a block)."""
+    byte, where = exc.object[exc.start], ""
+    try:
+        with _open_bytes(path) as handle:
+            for number, line in enumerate(handle, start=1):
+                try:
+                    line.decode(encoding)
+                except UnicodeDecodeError as bad:
+                    byte = line[bad.start]
+                    where = (f" at position {bad.start + 1} of line {number}"
+                             f"{' (the header)' if number == 1 else ''}")
+                    break
+    except _UNREADABLE:
+        pass
+    return (f"{path}: cannot be read as {encoding} (given by --encoding): byte 0x{byte:02x}"
+            f"{where} has no character in it; give the encoding the file was saved in (cp1252 "
+            "for Windows in Western Europe, latin-1, cp1250 for Central Europe, ...), or leave "
+            "--encoding out for UTF-8")
+
+
 def _not_utf8(path: Path, exc: UnicodeDecodeError) -> str:
     """The message for a CSV file that is not UTF-8: the first byte that cannot be read, its
     line and column, the line as the Windows-1252 code page (Western Europe; ISO Latin-1
@@ -520,9 +546,10 @@ def _not_utf8(path: Path, exc: UnicodeDecodeError) -> str:
     convert = (f", convert it (iconv -f WINDOWS-1252 -t UTF-8 {shlex.quote(path.name)} > "
                "utf8.csv)" if plain and shown_line else "")
     return (f"{path}: is not UTF-8 text (byte 0x{byte:02x} at position {position}{where} "
-            f"cannot be read{shown_line}); the encoding is not guessed: save it as CSV UTF-8 "
-            "(a choice of the spreadsheet's Save As; UTF-16 with a byte-order mark is read "
-            f"too){convert}, or save it as Parquet")
+            f"cannot be read{shown_line}); the encoding is not guessed: name it with --encoding "
+            "(--encoding cp1252 for a Windows spreadsheet in Western Europe), save it as CSV "
+            "UTF-8 (a choice of the spreadsheet's Save As; UTF-16 with a byte-order mark is "
+            f"read too){convert}, or save it as Parquet")
 
 
 def _open_text(path: Path, encoding: str, errors: str = "strict") -> Any:
@@ -532,17 +559,41 @@ def _open_text(path: Path, encoding: str, errors: str = "strict") -> Any:
     return io.TextIOWrapper(_open_bytes(path), encoding=encoding, errors=errors, newline="")
 
 
+_CHOSEN_ENCODING: list[str | None] = [None]
+
+
+def set_csv_encoding(name: str | None) -> None:
+    """The encoding ``--encoding`` names for the CSV files of this command (None: UTF-8)."""
+    _CHOSEN_ENCODING[0] = name
+
+
+def chosen_encoding(encoding: str) -> bool:
+    """True when ``encoding`` (as :func:`_csv_encoding` returned it) is one ``--encoding``
+    chose and not a Unicode one: a table read with it is written back as UTF-8 with a
+    byte-order mark, which spreadsheets read, so no character is lost."""
+    import codecs
+
+    return (_CHOSEN_ENCODING[0] is not None and encoding == _CHOSEN_ENCODING[0]
+            and not codecs.lookup(encoding).name.startswith("utf"))
+
+
 def _csv_encoding(path: Path) -> str:
-    """UTF-16 when the file starts with a UTF-16 byte-order mark (spreadsheets' "Unicode text")
-    or, without one, with two ASCII characters each followed (little-endian) or preceded
-    (big-endian) by a zero byte; UTF-8 otherwise (a UTF-8 byte-order mark is skipped)."""
+    """UTF-16 when the file starts with a UTF-16 byte-order mark (spreadsheets' "Unicode text"),
+    UTF-8 when it starts with a UTF-8 one; otherwise the encoding given with ``--encoding``
+    (:func:`set_csv_encoding`), and without it UTF-16 when the file starts with two ASCII
+    characters each followed (little-endian) or preceded (big-endian) by a zero byte, and UTF-8
+    otherwise."""
     try:
         with _open_bytes(path) as handle:
             start = handle.read(4)
     except _UNREADABLE:
-        return "utf-8-sig"
+        return _CHOSEN_ENCODING[0] or "utf-8-sig"
     if start[:2] in (b"\xff\xfe", b"\xfe\xff"):
         return "utf-16"
+    if start[:3] == b"\xef\xbb\xbf":
+        return "utf-8-sig"  # a byte-order mark says UTF-8, whatever --encoding says
+    if _CHOSEN_ENCODING[0] is not None:
+        return _CHOSEN_ENCODING[0]
     # UTF-16 without a byte-order mark (some database and script exports): a header of
     # ASCII letters shows every other byte zero; UTF-8 text holds no zero byte there (it was
     # read as one column named after the first letter, 's', and 'Unnamed: 1', ...)
