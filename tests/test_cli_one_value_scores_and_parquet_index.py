@@ -3,7 +3,7 @@ files whose score column was made the index before saving.
 
 Data: held-out probabilities of a scaled logistic regression on scikit-learn's breast cancer set
 (``_cli_helpers.cancer_held_out``, 289 rows). Each test failed on the code before this change
-(see docs/command_line.md, "Scores that are all one value, Parquet indexes and code pages").
+(see docs/command_line.md, "Scores that are all one value, Parquet indexes, code pages and misnamed files").
 """
 
 from __future__ import annotations

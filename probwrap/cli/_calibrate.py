@@ -33,6 +33,7 @@ from ._common import (
     check_scores_vary,
     clean,
     is_standard_stream,
+    not_found,
     require,
     row_number,
     rows_text,
@@ -404,7 +405,7 @@ def load_map(path: str | Path, scale: str | None = None) -> tuple[Any, dict[str,
     else:
         path = Path(path)
         if not path.exists():
-            raise DataError(f"{path}: file not found")
+            raise DataError(not_found(path))
         if path.is_dir():
             raise DataError(f"{path}: is a folder, not a map file")
 

@@ -22,7 +22,7 @@ from .._validation import plain
 
 __all__ = [
     "DataError", "MissingExtraError", "OPTIONAL_MODULES", "require", "shown", "clean",
-    "TABLE_SUFFIXES", "table_kind", "one_line", "warn_line", "check_ranking", "check_row_count",
+    "TABLE_SUFFIXES", "table_kind", "not_found", "one_line", "warn_line", "check_ranking", "check_row_count",
     "check_scores_vary",
     "FEW_ROWS", "MIN_RESAMPLES", "add_positive_label_flag", "add_format_flag",
     "add_resamples_flag", "whole_number", "add_seed_flag", "MAX_SEED", "add_weight_flag", "add_weight_dots_flag",
@@ -145,6 +145,21 @@ class StandardStream(str):
 
     def __new__(cls, text: str = "standard input") -> StandardStream:
         return super().__new__(cls, text)
+
+
+def not_found(path: str | Path) -> str:
+    """The message for a file that does not exist; a path starting with ``~`` adds that the
+    shell did not expand it (it expands ``~`` only at the start of an unquoted word, so not in
+    ``--scores=~/a.csv`` or ``"~/a.csv"``), naming the file it would have been."""
+    text = f"{path}: file not found"
+    if str(path).startswith("~"):
+        home = Path(str(path)).expanduser()
+        there = " (that file exists)" if home.exists() else ""
+        text += (f"; the ~ was not turned into the home folder, as the shell does only at the "
+                 f"start of an unquoted word (not after --option= or in quotes): give "
+                 f"{shown(str(home))}{there}, or write the option and the path apart "
+                 "(as in --scores ~/scores.csv)")
+    return text
 
 
 def is_standard_stream(path: Any) -> bool:

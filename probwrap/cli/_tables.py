@@ -25,6 +25,7 @@ from ._common import (
     clean,
     is_standard_stream,
     missing_count_text,
+    not_found,
     one_line,
     require,
     row_number,
@@ -65,7 +66,7 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
         return _read_standard_input(path, exact=exact, as_text=as_text, text=text)
     path = Path(path)
     if not path.exists():
-        raise DataError(f"{path}: file not found")
+        raise DataError(not_found(path))
     if path.is_dir():
         raise DataError(f"{path}: is a folder, not a file")
     suffix = path.suffix.lower()
@@ -74,6 +75,10 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
             f"{path}: {_NOT_TABLES[suffix]} files are not read; save the table as CSV (UTF-8) "
             "or Parquet (.csv, .parquet)"
         )
+    if table_kind(path) == "CSV" and path.suffix.lower() not in _COMPRESSED:
+        wrong = _not_text(path)
+        if wrong is not None:
+            raise DataError(wrong)
     if table_kind(path) == "Parquet":
         require("pyarrow")
     header: list[str] | None = None
@@ -463,6 +468,50 @@ _UNREADABLE = (OSError, EOFError, ValueError, UnicodeError, csv.Error, zipfile.B
 
 #: compressed CSV files pandas reads by extension, and the module that opens them
 _COMPRESSED = {".gz": "gzip", ".bz2": "bz2", ".xz": "lzma", ".zip": "zip"}
+
+
+def _not_text(path: Path) -> str | None:
+    """The message for a file read as CSV (by its extension) whose first bytes show another
+    kind of file: Parquet, a compressed file, an Excel or OpenDocument workbook (a workbook
+    renamed ``.csv`` or a file saved without its extension). Before, such files were refused as
+    "not UTF-8 text", showing their first line of binary bytes and advising ``--encoding``."""
+    try:
+        with open(path, "rb") as handle:
+            start = handle.read(8)
+    except OSError:
+        return None
+    rename = f"rename it to end in {{}} (mv {shlex.quote(path.name)} {{}}) and give that name"
+    if start.startswith(b"PAR1"):
+        what = "a Parquet file (it starts with PAR1)"
+        advice = rename.format(".parquet", shlex.quote(path.stem + ".parquet"))
+    elif start.startswith(b"\xd0\xcf\x11\xe0"):
+        what = "an Excel 97-2003 workbook (.xls)"
+        advice = "open it in the spreadsheet and save the sheet as CSV UTF-8"
+    elif start.startswith(b"PK\x03\x04"):
+        try:
+            with zipfile.ZipFile(path) as archive:
+                names = set(archive.namelist())
+        except _UNREADABLE:
+            names = set()
+        if "xl/workbook.xml" in names:
+            what = "an Excel workbook (.xlsx)"
+            advice = "open it in the spreadsheet and save the sheet as CSV UTF-8"
+        elif "content.xml" in names and "mimetype" in names:
+            what = "an OpenDocument spreadsheet (.ods)"
+            advice = "open it in the spreadsheet and save the sheet as CSV UTF-8"
+        else:
+            what = "a .zip archive"
+            advice = rename.format(".zip", shlex.quote(path.name + ".zip"))
+    else:
+        found = next((s for magic, s in _MAGIC[1:4] if start.startswith(magic)), None)
+        if found is None:
+            return None
+        kind = {".csv.gz": "gzip", ".csv.bz2": "bzip2", ".csv.xz": "xz"}[found]
+        ending = found[4:]  # ".gz", ...
+        what = f"{kind}-compressed"
+        advice = rename.format(ending, shlex.quote(path.name + ending))
+    return (f"{path}: is {what}, though its name ends in {path.suffix or 'no extension'} and "
+            f"so is read as CSV text; {advice}")
 
 
 def _zip_extra(name: str) -> bool:
