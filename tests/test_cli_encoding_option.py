@@ -102,3 +102,27 @@ def test_a_byte_order_mark_wins_over_encoding(frame, tmp_path, capsys):
     assert code == 0, err
     assert json.loads(out)["labels"]["positive"] == "bénin"
     assert json.loads(out)["n_rows"] == len(frame)
+
+
+def test_a_utf8_file_beside_a_windows_1252_one_is_read_as_utf8(frame, tmp_path, capsys):
+    """One --encoding names every CSV file of a command; a UTF-8 reference beside a
+    Windows-1252 batch was read as cp1252 ('bénin' as 'bÃ©nin': no label 'bénin'). A file
+    whose bytes beyond ASCII all form UTF-8 characters is read as UTF-8, with a warning."""
+    utf8, cp = tmp_path / "reference.csv", tmp_path / "batch.csv"
+    frame.to_csv(utf8, index=False)
+    frame.iloc[::2].to_csv(cp, index=False, encoding="cp1252")
+    plain_batch = tmp_path / "batch-utf8.csv"
+    frame.iloc[::2].to_csv(plain_batch, index=False)
+
+    def prevalence(batch, *extra):
+        return run(capsys, "prevalence", "--unlabelled", batch, "--score-column", "probabilité",
+                   "--reference", utf8, "--label-column", "état", "--positive-label", "bénin",
+                   "--resamples", 0, "--format", "json", *extra)
+
+    code, expected, err = prevalence(plain_batch)
+    assert code == 0, err
+    code, out, err = prevalence(cp, "--encoding", "cp1252")
+    assert code == 0, err
+    assert json.loads(out) == json.loads(expected)
+    assert f"{utf8}: read as UTF-8, not cp1252 (--encoding)" in err
+    assert str(cp) + ":" not in err

@@ -626,6 +626,35 @@ def chosen_encoding(encoding: str) -> bool:
             and not codecs.lookup(encoding).name.startswith("utf"))
 
 
+def _utf8_beyond_ascii(path: Path) -> bool:
+    """True when the file holds bytes beyond ASCII and all of them decode as UTF-8."""
+    beyond = False
+    try:
+        with _open_bytes(path) as handle:
+            tail = b""
+            while True:
+                block = handle.read(1 << 20)
+                if not block:
+                    break
+                block = tail + block
+                if not beyond and max(block) < 0x80:
+                    tail = b""
+                    continue
+                beyond = True
+                cut = len(block)  # a character split by the block's end waits for the next
+                while cut > 0 and cut > len(block) - 4 and 0x80 <= block[cut - 1] < 0xC0:
+                    cut -= 1
+                if cut > 0 and block[cut - 1] >= 0xC0:
+                    cut -= 1
+                block, tail = block[:cut], block[cut:]
+                block.decode("utf-8")
+            if tail:
+                tail.decode("utf-8")
+    except _UNREADABLE:
+        return False
+    return beyond
+
+
 def _csv_encoding(path: Path) -> str:
     """UTF-16 when the file starts with a UTF-16 byte-order mark (spreadsheets' "Unicode text"),
     UTF-8 when it starts with a UTF-8 one; otherwise the encoding given with ``--encoding``
@@ -642,6 +671,17 @@ def _csv_encoding(path: Path) -> str:
     if start[:3] == b"\xef\xbb\xbf":
         return "utf-8-sig"  # a byte-order mark says UTF-8, whatever --encoding says
     if _CHOSEN_ENCODING[0] is not None:
+        if chosen_encoding(_CHOSEN_ENCODING[0]) and _utf8_beyond_ascii(path):
+            # one --encoding for every file of the command: a file that is UTF-8 beside one
+            # saved in a code page would be read with its letters garbled ('bénin' as
+            # 'bÃ©nin'), since every byte means something in cp1252 or latin-1
+            from ._common import running_verb
+
+            warn_line(running_verb(), (
+                f"{path}: read as UTF-8, not {_CHOSEN_ENCODING[0]} (--encoding): every byte "
+                "beyond ASCII in it forms a UTF-8 character, which text in a one-byte code page "
+                "almost never does"))
+            return "utf-8"
         return _CHOSEN_ENCODING[0]
     # UTF-16 without a byte-order mark (some database and script exports): a header of
     # ASCII letters shows every other byte zero; UTF-8 text holds no zero byte there (it was
