@@ -1219,17 +1219,33 @@ _COMMA_NUMBER = re.compile(r"[-+]?[\d.]*\d,[\d.,]*\d(?:[eE][-+]?\d+)?")
 MISSING_MARKS = frozenset({"?", "-", "--", ".", "missing", "unknown", "#VALUE!", "#DIV/0!",
                            "#NUM!", "#REF!"})
 
+#: the error values spreadsheet formulas leave in a cell (Excel's, and LibreOffice's "Err:502")
+_SHEET_ERROR = re.compile(r"#(?:DIV/0!|VALUE!|REF!|NAME\?|NUM!|NULL!|SPILL!|CALC!|FIELD!)"
+                          r"|Err:\d{3}")
+
+
+def _is_mark(text: str) -> bool:
+    """A missing-value mark pandas does not read as missing, or a spreadsheet's error value."""
+    return text in MISSING_MARKS or _SHEET_ERROR.fullmatch(text) is not None
+
 
 def _marker_hint(series: Any, value: Any, path: str | Path) -> str:
     """After "'?' is not a finite number": how many rows hold that missing-value mark and which,
-    and how to write a missing value so that it is read as one; "" for other values."""
+    and how to write a missing value so that it is read as one; "" for other values. A
+    spreadsheet's error value (``#DIV/0!``, ``Err:502``) is named as one: the formula behind
+    it failed in those rows."""
     text = str(value).strip()
-    if text not in MISSING_MARKS:
+    if not _is_mark(text):
         return ""
     rows = np.flatnonzero(series.astype(str).str.strip().to_numpy() == text)
-    return (f"; {rows.shape[0]} of {series.shape[0]} rows hold {shown(text)}: "
-            f"{rows_text(path, rows)}; if it marks a missing value, fill those rows in or "
-            "remove them (an empty field or NA is read as missing)")
+    found = (f"; {rows.shape[0]} of {series.shape[0]} rows hold {shown(text)}: "
+             f"{rows_text(path, rows)}")
+    if _SHEET_ERROR.fullmatch(text):
+        return (found + "; it is the error value a spreadsheet formula leaves where it fails: "
+                "correct the formula, or clear those cells if they have no value (an empty field "
+                "is read as missing)")
+    return (found + "; if it marks a missing value, fill those rows in or remove them (an "
+            "empty field or NA is read as missing)")
 
 
 def _header_again_hint(frame: Any, series: Any, value: Any, path: str | Path) -> str:
@@ -1412,7 +1428,7 @@ def read_labels(
             flagged = np.isin(values, rare)
             hint += (f" ({', '.join(shown(v) for v in rare[:6])} in {int(flagged.sum())} of "
                      f"{values.shape[0]} rows: {rows_text(path, np.flatnonzero(flagged))})")
-        marks = [v for v in distinct if str(v).strip() in MISSING_MARKS]
+        marks = [v for v in distinct if _is_mark(str(v).strip())]
         if distinct.shape[0] > 2 and marks and not hint:
             # "?" for an unknown outcome (UCI files): read as a third label, with no row named
             flagged = np.isin(values.astype(str), [str(v) for v in marks])
