@@ -126,3 +126,31 @@ def test_a_utf8_file_beside_a_windows_1252_one_is_read_as_utf8(frame, tmp_path, 
     assert json.loads(out) == json.loads(expected)
     assert f"{utf8}: read as UTF-8, not cp1252 (--encoding)" in err
     assert str(cp) + ":" not in err
+
+
+def test_standard_input_in_a_code_page_and_in_utf8(frame, tmp_path, capsys, monkeypatch):
+    """--encoding reads standard input too; the UTF-8 warning names "standard input", not the
+    temporary copy it is read from."""
+    import io
+    import sys
+
+    plain = tmp_path / "batch.csv"
+    frame.to_csv(plain, index=False)
+
+    def prevalence(data, *extra):
+        monkeypatch.setattr(sys, "stdin", io.TextIOWrapper(io.BytesIO(data)))
+        return run(capsys, "prevalence", "--unlabelled", "-", "--score-column", "probabilité",
+                   "--source-prevalence", 0.6, "--resamples", 0, "--format", "json", *extra)
+
+    expected = json.loads(run(capsys, "prevalence", "--unlabelled", plain, "--score-column",
+                              "probabilité", "--source-prevalence", 0.6, "--resamples", 0,
+                              "--format", "json")[1])
+    code, out, err = prevalence(frame.to_csv(index=False).encode("cp1252"),
+                                "--encoding", "cp1252")
+    assert code == 0, err
+    assert json.loads(out) == expected
+    code, out, err = prevalence(frame.to_csv(index=False).encode("utf-8"),
+                                "--encoding", "cp1252")
+    assert code == 0, err
+    assert json.loads(out) == expected
+    assert "standard input: read as UTF-8, not cp1252" in err and "probwrap-stdin" not in err

@@ -677,8 +677,11 @@ def _csv_encoding(path: Path) -> str:
             # 'bÃ©nin'), since every byte means something in cp1252 or latin-1
             from ._common import running_verb
 
+            # standard input is read from a temporary copy: named as the stream
+            name = (StandardStream() if path.parent.name.startswith("probwrap-stdin-")
+                    else path)
             warn_line(running_verb(), (
-                f"{path}: read as UTF-8, not {_CHOSEN_ENCODING[0]} (--encoding): every byte "
+                f"{name}: read as UTF-8, not {_CHOSEN_ENCODING[0]} (--encoding): every byte "
                 "beyond ASCII in it forms a UTF-8 character, which text in a one-byte code page "
                 "almost never does"))
             return "utf-8"
