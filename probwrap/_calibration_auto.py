@@ -193,6 +193,21 @@ _CLASS_SHARES_MARGIN_SE = 1.0
 #: of 4 December 2026 on ``auto`` on the named tiny cases); ``False`` switches the rule off.
 _PASS_OVER_TEMPERATURE_BELOW_SHARES = True
 
+#: Two classes, a frozen model: the one-standard-error rule also passes over a temperature that
+#: is not the best map and whose cross-validated log loss is above the class shares' (see
+#: ``CLASS_SHARES``), whatever its side of the share and whether it softens or sharpens: a map
+#: without an intercept that the constant beats on the folds is no simpler account of the rows
+#: than the lower-scoring map with one. For a frozen model the scores the folds saw are the ones
+#: that predict, so the caveat of the rule above (near-constant fold scores beside a refit that
+#: spreads) does not arise. Stat2Data's FaithfulFaces (near chance), models fitted on 51 ratings
+#: and frozen, 30 calibration rows: temperatures at 0.63-0.66 on the folds against the class
+#: shares' 0.617, test log loss 1.10-1.25x scikit-learn's sigmoid (MLP, LDA, ridge, boosting);
+#: on the 27 frozen cells of benchmarks/hunt31_sweep.py where the rule applies, 1.023 -> 1.002x
+#: the sigmoid (geometric mean), quiet cells above 1.10x 4 -> 0
+#: (docs/evidence/small_data_log.md, "The session-31 calibration hunt"). ``False`` switches the
+#: rule off.
+_PASS_OVER_FROZEN_TEMPERATURE_ABOVE_SHARES = True
+
 #: Probabilities are floored at this value when scoring candidate maps by log loss, so that a map
 #: that predicts an exact 0 for an event that happens is heavily penalised but stays finite.
 _LOG_LOSS_FLOOR = 1e-15
@@ -781,7 +796,9 @@ class _AutoChoice:
         for name in self._simplicity_order(eligible, platt_first, vector_first):
             loss, se = scores_out[name]
             if (name == "temperature" and name != best
-                    and self._temperature_short_of_shares(means, scores, y, w, notes)):
+                    and (self._temperature_short_of_shares(means, scores, y, w, notes)
+                         or (ho.n_folds == 0
+                             and self._frozen_temperature_above_shares(means, scores, notes)))):
                 continue
             if (name == "temperature" and binary and name != best and platt_beyond
                     and _PASS_OVER_TEMPERATURE_AFTER_PLATT):
@@ -913,6 +930,23 @@ class _AutoChoice:
             f"({margin[nm][1]:.3g})"
         )
         notes["platt"] = text if "platt" not in notes else notes["platt"] + "; " + text
+        return True
+
+    @staticmethod
+    def _frozen_temperature_above_shares(means, scores, notes) -> bool:
+        """True (and noted) when the one-standard-error rule passes over a frozen model's
+        temperature for scoring above the class shares: see
+        ``_PASS_OVER_FROZEN_TEMPERATURE_ABOVE_SHARES``."""
+        if not (_PASS_OVER_FROZEN_TEMPERATURE_ABOVE_SHARES and scores.ndim == 1
+                and CLASS_SHARES in means and means["temperature"] > means[CLASS_SHARES]):
+            return False
+        text = (
+            f"passed over by the one-standard-error rule: cross-validated log loss "
+            f"{means['temperature']:.4g}, above the class shares' {means[CLASS_SHARES]:.4g}, "
+            "on a frozen model's scores (a map without an intercept that the constant beats)"
+        )
+        notes["temperature"] = text if "temperature" not in notes else (
+            notes["temperature"] + "; " + text)
         return True
 
     def _temperature_short_of_shares(self, means, scores, y, w, notes) -> bool:
