@@ -582,6 +582,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         w = self._count_scale_weights(ho.sample_weight)
         if not ho.from_tally:
             self._warn_count_reading(ho)
+        else:
+            self._warn_tally_count_reading(getattr(self, "tally_", None))
         if isinstance(self.method, CalibrationMap):
             self.method_ = type(self.method).__name__
             template = self.method
@@ -911,6 +913,25 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             return
         warn_count_reading(
             w, "CalibrationWrapper", "the calibration map counts",
+            "the fitted map and predict_proba (not the choice of map)", stacklevel=5)
+
+    def _warn_tally_count_reading(self, tally: Any) -> None:
+        """:meth:`_warn_count_reading` for held-out rows read from the bins of their tally (Dask
+        or Spark), from the tally's summary of the weights (their sum, rows of positive weight,
+        shared whole factor and Kish's size): the map counts the cells' weights as rows, so
+        weights summing to at least the rows that are not whole numbers, or share a factor,
+        move ``predict_proba`` with their scale, as in memory, in the same words (before
+        5 December 2026 a tally never said so)."""
+        from ._weights import warn_count_summary
+
+        rows = None if tally is None else tally.weighted_rows_by_label
+        factor = None if tally is None else tally.weight_factor
+        if rows is None or factor is None:
+            return
+        total = float(tally.total_weight) * float(getattr(tally, "weight_unit", 1.0))
+        warn_count_summary(
+            int(np.sum(rows)), total, None if factor < 0 else factor,
+            float(tally.effective_rows), "CalibrationWrapper", "the calibration map counts",
             "the fitted map and predict_proba (not the choice of map)", stacklevel=5)
 
     def _count_scale_weights(self, w: np.ndarray) -> np.ndarray:

@@ -276,6 +276,26 @@ def recalibrated_plugin_cutoff(
 _TALLY_ANCHOR = True
 
 
+def _tally_choice_weights(w: np.ndarray, tally: Any) -> np.ndarray:
+    """The weights of a tally's (bin, class) rows as the tuned rule's settling test reads them:
+    a count table (its cases) as they are; any other weights rescaled so that the cells sum to Kish's (1965) effective size of
+    the tallied rows, ``(sum w)**2 / sum w**2`` (``ScoreTally.effective_rows``), as
+    :func:`probwrap._weights.choice_weights` rescales the rows in memory. So multiplying every
+    weight by a constant moves no cutoff (before 5 December 2026 the cells' weights were read
+    as they stood: 369 breast-cancer rows with weights 0.5-2, tallied, gave 0.167 and the same
+    weights x1,000 gave 0.176)."""
+    from .scale._entry import tally_is_count_table
+
+    w = np.asarray(w, dtype=float)
+    if tally is None or tally_is_count_table(tally):
+        return w
+    # (unit weights, or none: Kish's size is the rows, and the cells keep their row counts)
+    kish, total = float(tally.effective_rows), float(w.sum())
+    if not (np.isfinite(kish) and kish > 0.0 and total > 0.0):
+        return w
+    return w * (kish / total)
+
+
 def _anchor_from_tally(tally: Any) -> bool:
     """Whether the anchor of a tuned cutoff is fitted from ``tally``'s bins (``_TALLY_ANCHOR``).
 
@@ -611,6 +631,7 @@ class _RuleFitting:
         cutoff 0.643 as counts, 0.357 divided by their sum). ``CalibrationWrapper`` warns the
         same way for its map."""
         if getattr(ho, "from_tally", False):
+            self._warn_tally_weight_scale()
             return
         w = np.asarray(ho.sample_weight)
         out, rescaled = count_weights(w[w > 0])
@@ -622,6 +643,29 @@ class _RuleFitting:
                 "Pass whole-number weights if they are row counts.",
                 WeightScaleWarning,
                 stacklevel=4,
+            )
+
+    def _warn_tally_weight_scale(self) -> None:
+        """:meth:`_warn_weight_scale` for held-out rows read from the bins of their tally (Dask
+        or Spark), from the tally's summary of the weights: they sum to less than the rows of
+        positive weight, so the settling test counts Kish's effective size of the rows
+        (:func:`_tally_choice_weights`), as in memory, where the warning is the same (before
+        5 December 2026 a tally never warned)."""
+        tally = getattr(self, "tally_", None)
+        rows = None if tally is None else tally.weighted_rows_by_label
+        if rows is None:
+            return
+        n_rows = int(np.sum(rows))
+        total = float(tally.total_weight) * float(getattr(tally, "weight_unit", 1.0))
+        kish = float(tally.effective_rows)
+        if 0.0 < total < n_rows and np.isfinite(kish) and abs(total - kish) > 1e-9 * kish:
+            warnings.warn(
+                f"{type(self).__name__}: `sample_weight` sums to less than the number of rows, "
+                "so the weights cannot be row frequencies; the test that settles the tuned rule "
+                f"counts the held-out rows as Kish's effective sample size ({kish:.4g}). "
+                "Pass whole-number weights if they are row counts.",
+                WeightScaleWarning,
+                stacklevel=5,
             )
 
     def _fit_cutoff(self, ho, p, matrix, share) -> None:
@@ -652,6 +696,8 @@ class _RuleFitting:
             # before, weights summing to at least the rows counted as they stood: x1,000 moved the
             # cutoff on breast cancer from 0.20 to 0.28)
             w_choice = choice_weights(ho.sample_weight, ho)
+            if getattr(ho, "from_tally", False):
+                w_choice = _tally_choice_weights(w_choice, getattr(self, "tally_", None))
             if getattr(ho, "from_tally", False) and _anchor_from_tally(self.tally_):
                 # _TALLY_ANCHOR: a tally of whole-number rows fits the anchor from its bins, each
                 # (bin, class) row counting its rows as cases (see _anchor_from_tally)

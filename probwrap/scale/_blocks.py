@@ -50,7 +50,26 @@ def _block_labels(yb: Any) -> np.ndarray:
             return yb.to_numpy(dtype=numpy_dtype)
         if numpy_dtype.kind in "iuf":
             return yb.to_numpy(dtype=float, na_value=np.nan)
-    return yb.to_numpy() if hasattr(yb, "to_numpy") else np.asarray(yb)
+    return _decimal_labels(yb.to_numpy() if hasattr(yb, "to_numpy") else np.asarray(yb))
+
+
+def _decimal_labels(y: np.ndarray) -> np.ndarray:
+    """Labels of a decimal column (Spark ``DecimalType``, SQL ``DECIMAL``: Python ``Decimal``
+    objects in an object array) as their numbers: whole numbers as integers, others as
+    floats, missing ones (None) as NaN, so that they are matched to the model's classes (or
+    named as missing) as numeric labels are. Any other array comes back as it is."""
+    import decimal
+
+    if y.dtype.kind != "O" or y.size == 0:
+        return y
+    values = y.ravel()
+    if not all(v is None or isinstance(v, decimal.Decimal) for v in values.tolist()):
+        return y
+    known = [v for v in values.tolist() if v is not None and v.is_finite()]
+    if len(known) == values.size and all(v == v.to_integral_value() for v in known):
+        return np.array([int(v) for v in known], dtype=np.int64).reshape(y.shape)
+    return np.array([np.nan if v is None else float(v) for v in values.tolist()],
+                    dtype=float).reshape(y.shape)
 
 
 def block_label_index(classes: np.ndarray, yb: Any, name: str = "y") -> np.ndarray:

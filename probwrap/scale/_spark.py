@@ -499,9 +499,18 @@ def _tally_partitions(
 
 
 def _convert_scores(pdf: Any, spec: tuple) -> tuple:
+    from ._blocks import _decimal_labels
+
     score, label, weight = spec
     s = pdf[score].to_numpy(dtype=float, na_value=np.nan)
-    y = None if label is None else pdf[label].to_numpy()
+    missing = int(np.count_nonzero(np.isnan(s)))
+    if missing:
+        # named here: the shared check would count the rows of one chunk of a partition
+        raise ValueError(
+            f"`scores`: the Spark column {score!r} has {missing} null or NaN value(s) in a "
+            "partition; every row needs a finite score (filter or fill them first)."
+        )
+    y = None if label is None else _decimal_labels(pdf[label].to_numpy())
     w = None if weight is None else pdf[weight].to_numpy(dtype=float, na_value=np.nan)
     return s, y, w
 
