@@ -1,6 +1,6 @@
 """Awkward Spark inputs, in one test on the shared session: a decimal (SQL ``DECIMAL``) label
 column, 20 rows spread over 8 partitions (most of them empty), and null scores given to
-``tally_scores``.
+``tally_scores`` and ``tally_counts``.
 
 Before 5 December 2026 a ``DecimalType`` label column was refused by every wrapper as "numbers
 in an object array" (and by ``tally_scores`` as "dtype object"), and a null score was reported
@@ -24,6 +24,7 @@ from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
 from probwrap import CalibrationWrapper, CostPolicyWrapper
+from probwrap.aggregated import tally_counts
 from probwrap.scale import tally_scores
 
 pytestmark = [
@@ -75,5 +76,12 @@ def test_decimal_labels_sparse_partitions_and_null_scores(spark):
     np.testing.assert_array_equal(t.bins, ref.bins)
     np.testing.assert_allclose(t.counts, ref.counts, rtol=1e-12)
     nulls = scores.withColumn("s", F.when(F.col("lab") == 0, F.lit(None)).otherwise(F.col("s")))
-    with pytest.raises(ValueError, match=r"Spark column 's' has \d+ null or NaN"):
+    with pytest.raises(ValueError, match=r"Spark column 's' has \d+ NaN or null value"):
         tally_scores(nulls, "lab")
+    # the same for the score column of per-group counts
+    counts = spark.createDataFrame(pd.DataFrame({"s": s, "k": yh * 3.0, "n": np.full(369, 3.0)}))
+    t = tally_counts(counts, "k", "n")
+    np.testing.assert_allclose(t.counts, tally_counts(s, yh * 3.0, np.full(369, 3.0)).counts)
+    counts = counts.withColumn("s", F.when(F.col("k") == 0, F.lit(None)).otherwise(F.col("s")))
+    with pytest.raises(ValueError, match=r"Spark column 's' has \d+ NaN or null value"):
+        tally_counts(counts, "k", "n")

@@ -498,18 +498,24 @@ def _tally_partitions(
     return tally
 
 
+def _score_values(pdf: Any, score: str) -> np.ndarray:
+    """The score column of one Arrow batch as floats, refused with its column named when it
+    holds nulls or NaN (the shared check would count the rows of one chunk of a partition)."""
+    s = pdf[score].to_numpy(dtype=float, na_value=np.nan)
+    missing = int(np.count_nonzero(np.isnan(s)))
+    if missing:
+        raise ValueError(
+            f"`scores`: the Spark column {score!r} has {missing} NaN or null value(s) in a "
+            "partition; every row needs a finite score (filter or fill them first)."
+        )
+    return s
+
+
 def _convert_scores(pdf: Any, spec: tuple) -> tuple:
     from ._blocks import _decimal_labels
 
     score, label, weight = spec
-    s = pdf[score].to_numpy(dtype=float, na_value=np.nan)
-    missing = int(np.count_nonzero(np.isnan(s)))
-    if missing:
-        # named here: the shared check would count the rows of one chunk of a partition
-        raise ValueError(
-            f"`scores`: the Spark column {score!r} has {missing} null or NaN value(s) in a "
-            "partition; every row needs a finite score (filter or fill them first)."
-        )
+    s = _score_values(pdf, score)
     y = None if label is None else _decimal_labels(pdf[label].to_numpy())
     w = None if weight is None else pdf[weight].to_numpy(dtype=float, na_value=np.nan)
     return s, y, w
@@ -562,7 +568,7 @@ def _convert_counts(pdf: Any, spec: tuple) -> tuple:
     score, succ, trials, check = spec
     k, n = check(pdf[succ].to_numpy(dtype=float, na_value=np.nan),
                  pdf[trials].to_numpy(dtype=float, na_value=np.nan))
-    s = pdf[score].to_numpy(dtype=float, na_value=np.nan)
+    s = _score_values(pdf, score)
     return np.repeat(s, 2), np.tile([1, 0], k.shape[0]), np.column_stack([k, n - k]).ravel()
 
 
