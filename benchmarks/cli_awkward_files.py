@@ -4,7 +4,8 @@ Held-out probabilities of a scaled logistic regression on scikit-learn's breast 
 (289 rows, the same rows as ``tests/_cli_helpers.cancer_held_out``) are written to CSV and
 Parquet as spreadsheets, databases and scripts write them: ``;`` with decimal commas, a
 byte-order mark with Windows line ends, Latin-1, quoted numbers, missing-value marks, labels in
-many spellings, trailing separators and blank lines, no header, a name twice, gzip, TSV,
+many spellings, trailing separators and blank lines, no header, a name twice (named by an option
+or not), gzip, TSV (written back as TSV by ``calibrate apply``),
 Parquet dtypes and indexes, an empty file, a header alone, scores that are all one value, a path
 with spaces and non-ASCII letters. Each file goes through ``cutoff``, ``calibrate fit``,
 ``calibrate apply`` (with a map fitted on the
@@ -101,6 +102,13 @@ def variants(b: pd.DataFrame) -> dict:
     add("no header line", lambda p: b.to_csv(p, index=False, header=False))
     add("a column name twice", lambda p: b.assign(s2=b.score).rename(
         columns={"s2": "score"}).to_csv(p, index=False))
+    # a spreadsheet export with two "notes" columns that no option names (read since
+    # 5 December 2026; calibrate apply writes both back)
+    def notes_twice(sep):
+        return lambda p: b.assign(n1="a, b", n2="c").rename(
+            columns={"n1": "notes", "n2": "notes"}).to_csv(p, index=False, sep=sep)
+    add("an unused name twice", notes_twice(","))
+    add("an unused name twice, TSV", notes_twice("\t"), ext=".tsv")
     add("gzip", lambda p: b.to_csv(p, index=False, compression="gzip"), ext=".csv.gz")
     add("TSV", lambda p: b.to_csv(p, index=False, sep="\t"), ext=".tsv")
     add("Parquet, categorical labels", lambda p: yn.assign(
@@ -145,7 +153,7 @@ def main(quick: bool = False) -> None:
                                  "platt", "--out", folder / f"m{i}.json"),
             "calibrate apply": run("calibrate", "apply", "--map", folder / "plain-map.json",
                                    "--scores", path, "--score-column", sc, *extra,
-                                   "--out", folder / "new folder" / f"a{i}.csv"),
+                                   "--out", folder / "new folder" / f"a{i}{ext if ext == '.tsv' else '.csv'}"),
             "prevalence": run("prevalence", "--unlabelled", path, "--score-column", sc, *extra,
                               "--source-prevalence", 0.6, "--resamples", 0, "--format",
                               "json"),

@@ -38,6 +38,7 @@ from ._common import (
     row_number,
     rows_text,
     shown,
+    table_kind,
     warn_line,
     whole_number,
 )
@@ -57,7 +58,14 @@ from ._promise_flags import (
     late_label_summary,
     read_late_labels,
 )
-from ._tables import numeric_column, probability_column, read_labels, read_table, read_weights
+from ._tables import (
+    numeric_column,
+    positions_text,
+    probability_column,
+    read_labels,
+    read_table,
+    read_weights,
+)
 from ._wording import cli_wording
 
 __all__ = [
@@ -477,6 +485,20 @@ def _apply(args: argparse.Namespace) -> int:
         frame = read_table(args.scores, exact=[args.score_column], as_text=True)
         scores = read_scores(frame, args.score_column, args.scores, scale=scale,
                              verb="calibrate", allow_missing=keep_missing)
+        repeated = frame.attrs.get("repeated_columns", {})
+        if args.output_column in repeated:
+            raise DataError(
+                f"{args.scores}: already has columns named {shown(args.output_column)} "
+                f"({positions_text(repeated[args.output_column])}, counting from 1); choose "
+                "another name with --output-column")
+        if repeated and not to_stdout(args.out) and table_kind(Path(args.out)) == "Parquet":
+            # a Parquet file cannot hold two columns of one name (pandas refuses to write it)
+            name, where = next(iter(repeated.items()))
+            raise DataError(
+                f"{args.scores}: the header names the column {shown(name)} more than once "
+                f"({positions_text(where)}, counting from 1), and a Parquet file cannot hold "
+                "two columns of one name; rename one of them (such as "
+                f"{shown(name + '_2')}), or write --out as .csv or .tsv, which keep both")
         if args.output_column in frame.columns:
             raise DataError(
                 f"{args.scores}: already has a column {shown(args.output_column)}; choose another "
@@ -506,6 +528,7 @@ def _apply(args: argparse.Namespace) -> int:
         out[np.isfinite(scores)] = given
         dialect = frame.attrs.get("csv_dialect")
         written = frame.attrs.get("csv_header")
+        aside = frame.attrs.get("repeated_as", {})
         frame = frame.copy()
         frame.attrs.clear()
         if written is not None and len(written) == frame.shape[1]:
@@ -514,6 +537,8 @@ def _apply(args: argparse.Namespace) -> int:
             frame.columns = [name if not str(name).strip() and str(column).startswith("Unnamed: ")
                              else column for name, column in zip(written, frame.columns,
                                                                  strict=True)]
+        # a name the header gives more than once is written back as it was, at each place
+        frame.columns = [aside.get(str(column), column) for column in frame.columns]
         if not is_numeric_dtype(frame[args.score_column].dtype):
             # a CSV column read as text: written as the numbers it holds (with the decimal
             # mark of the file it came from; a missing score as an empty field);
@@ -609,7 +634,8 @@ def register(subparsers: Any) -> None:
         "the first rows; refuse stops at the first one",
     )
     apply.add_argument("--out", default=None, metavar="FILE",
-                       help="output file: .csv, .parquet or .pq; '-' or left out: CSV on "
+                       help="output file: .csv, .tsv (tab-separated), .parquet or .pq; '-' "
+                       "or left out: CSV on "
                        "standard output (the summary line then goes to stderr)")
 
     def run_apply(args: argparse.Namespace) -> int:

@@ -57,7 +57,8 @@ MIN_RESAMPLES = 10
 
 #: table files: Parquet by these extensions, CSV by the rest of TABLE_SUFFIXES
 PARQUET_SUFFIXES = (".parquet", ".pq")
-TABLE_SUFFIXES = (".csv", *PARQUET_SUFFIXES)
+#: ``.tsv`` (tab-separated) is written with a tab, whatever the file read was separated by
+TABLE_SUFFIXES = (".csv", ".tsv", *PARQUET_SUFFIXES)
 
 
 def missing_extra_message(module: str) -> str:

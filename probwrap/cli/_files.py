@@ -220,7 +220,8 @@ def write_text(path: str | Path, text: str) -> None:
 
 
 def write_table(frame: Any, path: str | Path, *, dialect: dict[str, Any] | None = None) -> None:
-    """Write a DataFrame atomically, as Parquet (``.parquet``/``.pq``) or CSV (``.csv``).
+    """Write a DataFrame atomically, as Parquet (``.parquet``/``.pq``) or CSV (``.csv``, or
+    ``.tsv``: separated by tabs).
 
     ``dialect`` (CSV only): ``sep``, ``decimal``, ``bom``, ``newline`` and ``sep_line`` of the
     file the table was read from, so that a semicolon file with decimal commas is written back as one (numbers with a
@@ -251,6 +252,10 @@ def write_table(frame: Any, path: str | Path, *, dialect: dict[str, Any] | None 
         write_atomic(path, lambda tmp: frame.to_parquet(tmp, index=False))
     else:
         sep, newline = dialect.get("sep", ","), dialect.get("newline", "\n")
+        if path.suffix.lower() == ".tsv":
+            # tab-separated whatever the file read used (a decimal comma stays one: tab
+            # files with decimal commas are read as such)
+            sep = "\t"
         options = {"sep": sep, "decimal": dialect.get("decimal", "."), "lineterminator": newline}
         encoding = "utf-8-sig" if dialect.get("bom") else "utf-8"
 

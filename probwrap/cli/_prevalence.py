@@ -72,7 +72,7 @@ from ._prevalence_numbers import (
 )
 from ._progress import Stages
 from ._promise_flags import add_alarm_flags, alarm_settings
-from ._tables import read_labels, read_table, read_weights
+from ._tables import read_labels, read_table, read_weights, refuse_repeated
 
 #: Level at which the note under the estimate calls the test's result a shift (common practice).
 SHIFT_LEVEL = 0.05
@@ -95,6 +95,7 @@ def _cells(frame: Any, column: str, path: str, flag: str) -> np.ndarray:
     """The cell labels of ``column`` (``flag``), as written; a missing column or an empty
     label is a :class:`DataError` naming the file and the flag."""
     if column not in frame.columns:
+        refuse_repeated(frame, column, path, flag)
         raise DataError(f"{path}: no column {plain(column)!r} ({flag}); columns: "
                         f"{', '.join(map(str, list(frame.columns)[:12]))}")
     values = np.asarray(frame[column].to_numpy(), dtype=object)
@@ -112,6 +113,7 @@ def _batch_labels(frame: Any, args: argparse.Namespace, n: int) -> np.ndarray | 
     if args.batch_column is None:
         return None
     if args.batch_column not in frame.columns:
+        refuse_repeated(frame, args.batch_column, args.unlabelled, "--batch-column")
         raise DataError(f"{args.unlabelled}: no column {plain(args.batch_column)!r} "
                         "(--batch-column)")
     col = frame[args.batch_column]
@@ -426,6 +428,8 @@ def _run(args: argparse.Namespace) -> int:
                            text=([] if args.batch_column is None else [args.batch_column])
                            + ([] if args.cell_column is None else [args.cell_column]))
         proba = read_scores(frame, args.score_column, args.unlabelled, scale=args.scale, verb="prevalence")
+        if args.weight_column is not None:
+            refuse_repeated(frame, args.weight_column, args.unlabelled, "--weight-column")
         if (args.weight_column is not None and args.weight_column not in frame.columns
                 and args.reference is not None and not is_standard_stream(args.reference)):
             # the weights of the labelled file given to --weight-column, which weights the

@@ -47,7 +47,14 @@ from ._promise_flags import (
     promise_summary,
     read_late_labels,
 )
-from ._tables import numeric_column, probability_column, read_labels, read_table, read_weights
+from ._tables import (
+    numeric_column,
+    probability_column,
+    read_labels,
+    read_table,
+    read_weights,
+    refuse_repeated,
+)
 
 __all__ = ["register"]
 
@@ -392,6 +399,7 @@ def _check_class_rows(y: np.ndarray, columns: list[str], path: str) -> None:
 def _class_labels(frame, args: argparse.Namespace, columns: list[str]) -> np.ndarray:
     pd = require("pandas")
     if args.label_column not in frame.columns:
+        refuse_repeated(frame, args.label_column, args.scores, "--label-column")
         raise DataError(f"{args.scores}: no column {shown(args.label_column)} (given by "
                         f"--label-column)")
     raw = frame[args.label_column]
@@ -455,6 +463,7 @@ def _group_labels(frame, column: str, path: str, flag: str = "--group-column") -
     """The --group-column (or ``flag``) as text labels, exactly as written (read with
     :func:`_text_columns`); an empty cell is refused (never silently dropped)."""
     if column not in frame.columns:
+        refuse_repeated(frame, column, path, flag)
         raise DataError(f"{path}: no column {shown(column)} ({flag}); the columns are "
                         f"{', '.join(shown(str(c)) for c in frame.columns)}")
     raw = frame[column]

@@ -36,7 +36,7 @@ from ._common import (
     warn_line,
 )
 
-__all__ = ["read_table", "no_column", "numeric_column", "probability_column", "read_labels",
+__all__ = ["read_table", "no_column", "refuse_repeated", "positions_text", "numeric_column", "probability_column", "read_labels",
            "read_weights"]
 
 
@@ -60,6 +60,12 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     ``text``: columns read from CSV as the text they hold, nothing taken for a missing value
     but an empty field (group labels: ``01`` and ``1`` stay two labels, ``NA`` stays ``NA``);
     the other columns are read as usual.
+
+    A name the header gives more than once (two ``notes`` columns of a spreadsheet export) is
+    read: each of those columns is renamed ``name [column k]`` so that no option reaches one
+    by the repeated name (:func:`refuse_repeated` refuses an option that names it, giving the
+    positions), and ``frame.attrs["repeated_as"]`` keeps the names as written for
+    ``calibrate apply`` to write back.
     """
     pd = require("pandas")
     if is_standard_stream(path):
@@ -174,18 +180,78 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     # empty names (a trailing separator) become "Unnamed: k" and can be told apart
     repeated = sorted({c for c in names if c.strip() and names.count(c) > 1})
     if repeated:
-        # pandas renames the second of two equal names ("risk" -> "risk.1"): which one a flag
-        # meant cannot be told, so neither is picked
         if header is not None and numbers_only_header(names):
             # a file without a header line: its first row of numbers was read as the names
             raise DataError(f"{path}: {_NO_HEADER}")
-        raise DataError(
-            f"{path}: the header names the column(s) {', '.join(shown(c) for c in repeated)} "
-            "more than once; rename them so that each column has its own name"
-        )
+        if len(names) != frame.shape[1]:
+            raise DataError(
+                f"{path}: the header names the column(s) "
+                f"{', '.join(shown(c) for c in repeated)} more than once; rename them so that "
+                "each column has its own name")
+        frame = _set_repeated_aside(frame, names, repeated)
     if frame.shape[0] == 0:
         raise DataError(f"{path}: the file has a header but no rows")
     return frame
+
+
+def _set_repeated_aside(frame: Any, names: list[str], repeated: list[str]) -> Any:
+    """``frame`` with every column of a name the header gives more than once renamed to
+    ``name [column k]`` (k counting from 1), so that no option reaches one of them by the
+    repeated name; ``frame.attrs["repeated_columns"]`` maps each repeated name to its
+    positions and ``frame.attrs["repeated_as"]`` each new name to the name written.
+
+    pandas reads ``notes,notes`` as ``notes`` and ``notes.1``: an option naming ``notes``
+    took the first without a word, and ``notes.1`` named a column that is not in the file.
+    Until 5 December 2026 such a file was refused even when no option named the column.
+    """
+    columns = [str(c) for c in frame.columns]
+    positions = {name: [i + 1 for i, c in enumerate(names) if c == name] for name in repeated}
+    for i, name in enumerate(names):
+        # a name written once that pandas changed because it looked like a renamed repeat
+        # ("notes,notes,notes.1"): its name as written
+        if name.strip() and name not in positions:
+            columns[i] = name
+    taken = set(columns)
+    aside: dict[str, str] = {}
+    for name, where in positions.items():
+        for k in where:
+            label = f"{name} [column {k}]"
+            while label in taken:
+                label += "'"
+            taken.add(label)
+            columns[k - 1] = label
+            aside[label] = name
+    attrs = dict(frame.attrs)
+    frame = frame.set_axis(columns, axis=1)
+    frame.attrs.update(attrs)
+    frame.attrs["repeated_columns"] = positions
+    frame.attrs["repeated_as"] = aside
+    return frame
+
+
+def positions_text(where: list[int]) -> str:
+    """Column positions as words: "columns 2 and 5" (counting from 1).
+
+    Examples
+    --------
+    >>> positions_text([2, 5]), positions_text([1, 3, 4])
+    ('columns 2 and 5', 'columns 1, 3 and 4')
+    """
+    numbers = [str(k) for k in where]
+    return "columns " + (", ".join(numbers[:-1]) + " and " + numbers[-1])
+
+
+def refuse_repeated(frame: Any, column: Any, path: str | Path, flag: str) -> None:
+    """A DataError when ``column`` (given by ``flag``) is a name the file's header gives more
+    than once: which of the columns the option means cannot be told, so none is picked."""
+    where = frame.attrs.get("repeated_columns", {}).get(str(column))
+    if where:
+        raise DataError(
+            f"{path}: the header names the column(s) {shown(str(column))} more than once "
+            f"({positions_text(where)}, counting from 1) and {flag} names it: which one is "
+            "meant cannot be told; rename them so that each column has its own name")
+
+
 
 
 #: the first bytes of the forms standard input may take, and the extension a file of that form
@@ -924,6 +990,7 @@ def no_column(frame: Any, column: str, path: str | Path, flag: str) -> DataError
     """The error for a column that is not in the file (naming a column whose name differs only
     in surrounding spaces or in case, which is easy to miss in a spreadsheet, and a CSV file
     whose first line holds numbers only: a file without a header line)."""
+    refuse_repeated(frame, column, path, flag)
     key = str(column).strip().casefold()
     near = [str(c) for c in frame.columns if str(c).strip().casefold() == key]
     hint = (f" (the column {shown(near[0])} differs only in spaces or case: give its exact name, "
