@@ -114,6 +114,17 @@ def test_an_option_naming_the_repeated_name_is_refused_with_its_positions(files,
             f"counting from 1) and {flag} names it") in err
 
 
+def test_pandas_name_for_the_second_copy_is_not_a_column(files, capsys):
+    """pandas reads the second "notes" as "notes.1", a name that is not in the file: an option
+    giving it is told that no such column exists, the list showing the header's names."""
+    _, twice = files
+    code, _, err = run(capsys, "cutoff", "--scores", twice, "--score-column", "notes.1",
+                       "--label-column", "y", "--cost-fp", 1, "--cost-fn", 5)
+    assert code == 1
+    assert "no column 'notes.1' (given by --score-column)" in err
+    assert "'notes' (column 2)" in err and "'notes' (column 8)" in err
+
+
 def test_calibrate_apply_writes_both_columns_back_and_refuses_parquet(files, tmp_path, capsys):
     plain, twice = files
     fitted = tmp_path / "map.json"

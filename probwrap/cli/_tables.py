@@ -951,7 +951,11 @@ def _csv_dialect(path: Path, encoding: str = "utf-8-sig") -> tuple[str, str]:
 
 
 def _columns_listed(frame: Any) -> str:
-    names = [shown(str(c)) for c in frame.columns[:10]]
+    aside = frame.attrs.get("repeated_as", {})
+    # a name the header gives more than once: as written, with its place (not the name it
+    # was set aside under, which is not in the file)
+    names = [f"{shown(aside[str(c)])} ({re.findall(r'column [0-9]+', str(c))[-1]})"
+             if str(c) in aside else shown(str(c)) for c in frame.columns[:10]]
     more = ", ..." if frame.shape[1] > 10 else ""
     unnamed = [str(c) for c in frame.columns[:10] if _UNNAMED.fullmatch(str(c))]
     # pandas' name for an empty header cell, which is not in the file: say what it stands for
