@@ -39,14 +39,13 @@ bad weights) and prints what each call did.
 Run from the repository root with ``PYTHONPATH=$PWD``: ``nice python benchmarks/cost_hunt31.py
 --quick`` (three sets, two models, one seed), ``--csv F`` (every set, model, size, two seeds;
 ``--modes frozen --bayes-only`` for the frozen plug-in check alone),
-``--from-csv F`` (summarise saved rows), ``--edges``, ``--noise 10`` (false alarms of the frozen
-plug-in checks on ordinary data). Results: docs/evidence/small_data_log.md,
+``--from-csv F`` (summarise saved rows), ``--edges``. The trial check against out-of-fold Platt
+scaling (commit cb8da9a, reverted) and its ``--noise`` mode are described in the log. Results: docs/evidence/small_data_log.md,
 "Cost hunt on fresh sets (session 31)".
 """
 
 from __future__ import annotations
 
-import re
 import sys
 import time
 import warnings
@@ -56,9 +55,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 from sklearn.base import clone
-from sklearn.calibration import CalibratedClassifierCV
 from sklearn.ensemble import GradientBoostingClassifier, RandomForestClassifier
-from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 from sklearn.metrics import make_scorer
 from sklearn.model_selection import StratifiedKFold, TunedThresholdClassifierCV
@@ -136,25 +133,13 @@ def models() -> dict:
             "gb": GradientBoostingClassifier(n_estimators=50, max_depth=2, random_state=0)}
 
 
-def _fit(make, X, y, z: dict | None = None):
-    """(fitted or None, warning names; probwrap's marked ``*``, or ``CRASH ...``). ``z`` gets
-    the difference over its standard error that a frozen plug-in check's message gives."""
+def _fit(make, X, y):
+    """(fitted or None, warning names; probwrap's marked ``*``, or ``CRASH ...``)."""
     caught: list = []
-    real = warnings.warn
-
-    def keep(message, *args, **kw):
-        m = re.search(r"difference ([-0-9.e+]+) \+- ([0-9.e+-]+)", str(message))
-        if z is not None and m and "Platt" in str(message):
-            z["platt_z"] = float(m.group(1)) / max(float(m.group(2)), 1e-300)
-        return real(message, *args, **kw)
-
     try:
-        warnings.warn = keep
         return L.fit_listing_warnings(make(), X, y, None, caught), ",".join(caught)
     except Exception as e:  # noqa: BLE001 (a crash is a finding)
         return None, f"CRASH {type(e).__name__}: {e}"[:200]
-    finally:
-        warnings.warn = real
 
 
 def _rowcost(act: np.ndarray, pos: np.ndarray, fp: float, fn: float) -> np.ndarray:
@@ -205,7 +190,7 @@ def one_cell(rows: list, task: Task, mname: str, model, n_cal: int, mode: str, s
                           ("tuned", lambda c=costs: CostPolicyWrapper(make_base(), costs=c, strategy="tuned",
                                                                      random_state=seed)))[:1 if bayes_only else 2]:
             np.random.seed(1000 + seed)  # noqa: NPY002
-            pol, row[f"{tag}_warn"] = _fit(make, Xc, yc, row if tag == "bayes" else None)
+            pol, row[f"{tag}_warn"] = _fit(make, Xc, yc)
             if pol is not None:
                 per[tag] = _rowcost(pol.predict(Xt) == 1, pos, fp, fn)
                 if tag == "tuned":
@@ -341,59 +326,14 @@ def edges() -> None:
         print(f"weights {strategy:5s} scaled 1e-3/1/1e3 -> cutoffs {cuts}")
 
 
-def noise(draws: int = 10) -> None:
-    """False alarms of the frozen plug-in checks on ordinary data: a scaled logistic regression
-    frozen on 500 rows, 500 held-out rows given to ``fit``, the other rows fresh; scikit-learn's
-    breast cancer (569 rows: 250 and 250), ISLR's Default and the invented parcels (the sets
-    of benchmarks/warning_noise.py). Per set and cost ratio: draws warned, and the plug-in's
-    fresh-row cost minus the sigmoid's (fitted on the held-out rows) in the warned draws."""
-    from sklearn.datasets import load_breast_cancer
-
-    from probwrap import CostPolicyWrapper
-    from probwrap.datasets import make_parcels
-
-    Xb, yb = load_breast_cancer(return_X_y=True)
-    d = rdata("ISLR", "Default")
-    Xd = pd.get_dummies(d[["student", "balance", "income"]], drop_first=True).astype(float).to_numpy()
-    yd = (d["default"] == "Yes").to_numpy().astype(int)
-    par = make_parcels(3000, random_state=0)
-    Xp = pd.get_dummies(pd.DataFrame(par.data), drop_first=True).astype(float).to_numpy()
-    yp = (np.asarray(par.target) == np.unique(par.target)[1]).astype(int)
-    for name, X, y, n in (("breast_cancer", Xb, yb, 250), ("Default", Xd, yd, 500), ("parcels", Xp, yp, 500)):
-        for fp, fn in RATIOS:
-            said, z3, excess = 0, 0, []
-            for seed in range(draws):
-                idx = np.random.default_rng(seed).permutation(len(y))
-                a, b, c = idx[:n], idx[n:2 * n], idx[2 * n:]
-                m = make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000)).fit(X[a], y[a])
-                with warnings.catch_warnings(record=True) as ws:
-                    warnings.simplefilter("always")
-                    pol = CostPolicyWrapper(FrozenEstimator(m), costs={"fp": fp, "fn": fn}).fit(X[b], y[b])
-                zs = [float(m.group(1)) / float(m.group(2)) for w in ws if "Platt" in w.category.__name__
-                      for m in [re.search(r"difference ([-0-9.e+]+) \+- ([0-9.e+-]+)", str(w.message))] if m]
-                if zs:
-                    said += 1
-                    z3 += zs[0] > 3
-                    sig = CalibratedClassifierCV(FrozenEstimator(m), method="sigmoid", ensemble=False).fit(X[b], y[b])
-                    cut = fp / (fp + fn)
-                    excess.append(_rowcost(pol.predict(X[c]) == 1, y[c] == 1, fp, fn).mean()
-                                  - _rowcost(sig.predict_proba(X[c])[:, 1] > cut, y[c] == 1, fp, fn).mean())
-            print(f"{name:14s} {fp:g}:{fn:g}  warned {said}/{draws} (above 3 standard errors {z3})"
-                  + (f"  fresh plug-in minus sigmoid when warned {np.mean(excess):+.4f}" if excess else ""))
-
-
 def main(argv: list[str]) -> None:
     ap = L.sweep_arguments(__doc__.split("\n")[0], seeds=2, modes="cross,frozen")
     ap.add_argument("--edges", action="store_true")
-    ap.add_argument("--noise", type=int, default=0, help="false-alarm draws of the frozen plug-in checks")
     ap.add_argument("--bayes-only", action="store_true", help="the plug-in rule and the references only")
     a = ap.parse_args(argv)
     warnings.simplefilter("ignore", FutureWarning)
     if a.edges:
         edges()
-        return
-    if a.noise:
-        noise(a.noise)
         return
     if a.from_csv:
         summarise(L.from_csv(a.from_csv))

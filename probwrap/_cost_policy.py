@@ -44,7 +44,6 @@ from ._validation import (
 )
 from .decision import (
     PlugInCostAboveOneActionWarning,
-    PlugInCostAbovePlattWarning,
     apply_class_offsets,
     budget_actions,
     check_capacity,
@@ -58,7 +57,6 @@ __all__ = ["CostPolicyWrapper"]
 
 _STRATEGIES = ("bayes", "tuned", "fixed")
 _BINARY_ONLY = "Only binary classification is supported"
-PLATT_CHECK_FOLDS = 5  # folds of the frozen plug-in rule's check against Platt scaling
 
 
 class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
@@ -100,9 +98,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         ``"bayes"``: the plug-in rule, argmin over actions of ``sum_k p_k C[k, a]`` (binary: act
         when ``p > (c_fp - c_tn) / ((c_fp - c_tn) + (c_fn - c_tp))``, Elkan 2001; with a
         ``FrozenEstimator``, ``PlugInCostAboveOneActionWarning`` says when the rows given to
-        :meth:`fit` show that rule to cost more than one action for every row, and
-        ``PlugInCostAbovePlattWarning`` when they show it to cost more than the same cutoff on
-        Platt scaling fitted out of fold on those rows).
+        :meth:`fit` show that rule to cost more than one action for every row).
         ``"tuned"``: binary with constant costs, the cutoff on ``p`` with the least cost on the
         out-of-fold predictions of all folds pooled (an exact search over every distinct held-out
         probability), settled toward the plug-in cutoff where the held-out rows do not show it
@@ -529,11 +525,10 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
             if (self._cutoff_mode and self.strategy == "bayes" and budget_share is None
                     and self.guarantee is None and is_frozen(self.estimator)
                     and not ho.from_tally):
-                if not self._warn_plugin_worse_than_one_action(realised, ho, matrix):
-                    self._warn_plugin_worse_than_platt(realised, ho, matrix, p)
+                self._warn_plugin_worse_than_one_action(realised, ho, matrix)
         return self
 
-    def _warn_plugin_worse_than_one_action(self, realised, ho, matrix) -> bool:
+    def _warn_plugin_worse_than_one_action(self, realised, ho, matrix) -> None:
         """Frozen model, plug-in rule: say so when, on the rows given to ``fit`` (all held out
         from the model), the plug-in decisions cost more than taking one action for every row,
         by more than two standard errors of the paired row differences (rows counted as
@@ -550,7 +545,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         cw, _ = count_weights(w[keep])
         n = float(cw.sum())
         if n <= 1.0:
-            return False
+            return
         y = np.asarray(ho.y_index)[keep].astype(np.intp)
         # costs divided by a power of two (exact), so that sums of huge costs cannot overflow;
         # the comparison does not depend on the scale, the numbers shown are scaled back
@@ -562,7 +557,7 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
         mean = float(cw @ d) / n
         se = math.sqrt(max(float(cw @ (d - mean) ** 2) / (n - 1.0), 0.0) / n)
         if not (mean > 0.0 and mean > 2.0 * se):
-            return False
+            return
         warnings.warn(
             f"{type(self).__name__}: on the {int(keep.sum())} rows given to fit (all held out "
             f"from the frozen model), the plug-in rule (cutoff {self.cutoff_:.4g} on the "
@@ -575,75 +570,6 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
             PlugInCostAboveOneActionWarning,
             stacklevel=3,
         )
-        return True
-
-    def _warn_plugin_worse_than_platt(self, realised, ho, matrix, p) -> bool:
-        """Frozen model, plug-in rule: say so when, on the rows given to ``fit``, the plug-in
-        decisions on the model's own probabilities cost more than the same cutoff applied to
-        Platt scaling fitted on the other rows (stratified folds, ``PLATT_CHECK_FOLDS`` or the
-        rarer class's rows if fewer, shuffled with a fixed seed so that the check does not
-        depend on ``random_state``), by more than two standard errors of the paired row
-        differences; rows counted as the one-action check counts them, and a class needs
-        ``FEW_CLASS_ROWS`` (5) counted rows. Platt scaling is the regularised map that
-        scikit-learn's ``CalibratedClassifierCV`` defaults to, so this is the cost a user would
-        get from it on the same rows. ``benchmarks/cost_hunt31.py``: frozen models on nine
-        bundled sets no earlier cost hunt used, the plug-in rule 0.12 a row above scikit-learn's
-        sigmoid on fresh rows, and in about a sixth of the cells worse than both it and
-        scikit-learn's tuned threshold by more than two standard errors, with no warning
-        (docs/evidence/small_data_log.md, "Cost hunt on fresh sets (session 31)")."""
-        from sklearn.frozen import FrozenEstimator
-        from sklearn.model_selection import StratifiedKFold
-
-        from ._calibration_wrapper import FEW_CLASS_ROWS, CalibrationWrapper
-        from ._column_models import ProbabilityColumn
-        from .calibration._base import count_weights
-
-        w = np.asarray(ho.sample_weight, dtype=float)
-        keep = w > 0
-        cw, _ = count_weights(w[keep])
-        y = np.asarray(ho.y_index)[keep].astype(np.intp)
-        fewest = float(np.bincount(y, weights=cw, minlength=2).min())
-        rows_fewest = int(np.bincount(y, minlength=2).min())
-        if fewest < FEW_CLASS_ROWS or rows_fewest < 2:
-            return False
-        q = np.asarray(p, dtype=float)[keep]
-        wk = w[keep]
-        platt_p = np.empty_like(q)
-        folds = StratifiedKFold(min(PLATT_CHECK_FOLDS, rows_fewest), shuffle=True, random_state=0)
-        try:
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore")
-                for tr, te in folds.split(q[:, None], y):
-                    if np.unique(y[tr]).shape[0] < 2:
-                        return False
-                    platt = CalibrationWrapper(
-                        FrozenEstimator(ProbabilityColumn().fit()), method="platt"
-                    ).fit(q[tr, None], y[tr], sample_weight=wk[tr])
-                    platt_p[te] = platt.predict_proba(q[te, None])[:, 1]
-        except ValueError:
-            return False
-        unit = power_of_two_unit(matrix)
-        own = np.asarray(realised, dtype=float)[keep] / unit
-        other = matrix[y, (platt_p > self.cutoff_).astype(np.intp)] / unit
-        n = float(cw.sum())
-        d = own - other
-        mean = float(cw @ d) / n
-        se = math.sqrt(max(float(cw @ (d - mean) ** 2) / (n - 1.0), 0.0) / n)
-        if not (mean > 0.0 and mean > 2.0 * se):
-            return False
-        warnings.warn(
-            f"{type(self).__name__}: on the {int(keep.sum())} rows given to fit (all held out "
-            f"from the frozen model), the plug-in rule (cutoff {self.cutoff_:.4g} on the "
-            f"model's own probabilities) costs {float(cw @ own) / n * unit:.4g} a row, more than "
-            f"the same cutoff on Platt scaling fitted on the other rows in {folds.n_splits} "
-            f"folds ({float(cw @ other) / n * unit:.4g}; difference {mean * unit:.3g} +- "
-            f"{se * unit:.3g}): the model's probabilities do not fit these rows. Use "
-            "strategy='tuned', or wrap a CalibrationWrapper: "
-            "CostPolicyWrapper(CalibrationWrapper(model), ...).",
-            PlugInCostAbovePlattWarning,
-            stacklevel=3,
-        )
-        return True
 
     def _fit_rule_dask(self, X: Any, y: Any, sample_weight: Any) -> CostPolicyWrapper:
         """Dask rows with a frozen estimator, for multiclass models or costs given as a function

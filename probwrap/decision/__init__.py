@@ -38,7 +38,7 @@ from ._offsets import (
     class_offset_curve,
     tune_class_offsets,
 )
-from ._plugin_check import PlugInCostAboveOneActionWarning, PlugInCostAbovePlattWarning
+from ._plugin_check import PlugInCostAboveOneActionWarning
 from ._scorer import make_cost_scorer, realised_cost
 from ._settle import SettledCutoff, SettledOffsets, settle_class_offsets, settle_cutoff
 
@@ -55,7 +55,6 @@ __all__ = [
     "GuaranteedOffsets",
     "OffsetCurve",
     "PlugInCostAboveOneActionWarning",
-    "PlugInCostAbovePlattWarning",
     "SettledCutoff",
     "SettledOffsets",
     "action_savings",

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-__all__ = ["PlugInCostAboveOneActionWarning", "PlugInCostAbovePlattWarning"]
+__all__ = ["PlugInCostAboveOneActionWarning"]
 
 
 class PlugInCostAboveOneActionWarning(UserWarning):
@@ -21,25 +21,5 @@ class PlugInCostAboveOneActionWarning(UserWarning):
     >>> with warnings.catch_warnings():
     ...     warnings.simplefilter("error", PlugInCostAboveOneActionWarning)
     ...     issubclass(PlugInCostAboveOneActionWarning, UserWarning)
-    True
-    """
-
-
-class PlugInCostAbovePlattWarning(UserWarning):
-    """A frozen model's plug-in decisions cost more, on the rows given to ``fit``, than the same
-    cutoff on Platt scaling fitted on the other rows in folds (by more than two standard
-    errors of the paired row differences).
-
-    Raised by ``CostPolicyWrapper(FrozenEstimator(model), costs=...)`` with the default
-    ``strategy="bayes"`` where :class:`PlugInCostAboveOneActionWarning` was not: the rows given
-    to ``fit`` are held out from the frozen model, and on them a one-variable logistic map of
-    its probabilities, fitted out of fold (the map scikit-learn's ``CalibratedClassifierCV``
-    defaults to), led to cheaper decisions than the model's own probabilities. The fitted rule
-    is not changed.
-
-    Examples
-    --------
-    >>> from probwrap.decision import PlugInCostAbovePlattWarning
-    >>> issubclass(PlugInCostAbovePlattWarning, UserWarning)
     True
     """
