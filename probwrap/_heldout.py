@@ -1147,10 +1147,27 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                     "have no held-out prediction."
                 )
             cells = feature_cells(X, sw, y_index, index=index)
-            if cells is not None:
-                splits, fold = self._splits_keeping_cells(splits, fold, cells, y_index)
-                if fit_rows is not None:  # (the cells' folds are rebuilt from all rows)
-                    splits = [(train[np.isin(train, fit_rows)], test) for train, test in splits]
+            if fit_rows is None:
+                if cells is not None:
+                    splits, fold = self._splits_keeping_cells(splits, fold, cells, y_index)
+            else:
+                # copies of a row are kept together as in the fit on the weighted rows alone:
+                # the cells and each cell's fold are decided among the weighted rows, and a
+                # zero row joins the fold of the weighted rows with its features (until the
+                # evening of 5 December 2026 the cells were found among all rows and followed
+                # their first row, so a zero row there took its weighted copies to its own
+                # fold: benchmarks/zero_weight_folds_check.py)
+                pos = np.flatnonzero(sw > 0)
+                pos_cells = feature_cells(_safe_indexing(indexable(X)[0], pos), sw[pos],
+                                          np.asarray(y_index)[pos])
+                pos_fold = fold[pos]
+                if pos_cells is not None:
+                    _, pos_fold = self._splits_keeping_cells(None, pos_fold, pos_cells,
+                                                             np.asarray(y_index)[pos])
+                if isinstance(self.cv if self.cv is not None else 5, numbers.Integral):
+                    # (folds of `cv` stay as given: _splits_keeping_cells only warns there)
+                    splits, fold = self._folds_with_zero_rows(splits, fold, pos, pos_fold,
+                                                              fit_rows, sw, index)
             n_folds = len(splits)
             n_classes = classes.shape[0]
             short = [i for i, (train, _) in enumerate(splits)
@@ -1336,7 +1353,17 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
         except ValueError as exc:  # (numpy's LinAlgError is a ValueError)
             raise ValueError(self._fold_failure(X, y, y_index, classes, splits, est_params,
                                                 exc)) from exc
-        estimator = clone(self.estimator).fit(X, y, **est_params)
+        # the final model, as the fold models (whose training parts hold the rows with cases
+        # left), on the rows of positive count: rows of weight 0 join no model here either
+        # (until the evening of 5 December 2026 they entered it at weight 0, and a model that
+        # draws rows, a random forest, drew them: benchmarks/zero_weight_folds_check.py)
+        fit_rows = rows_for_models(self, self.estimator, classes, y_index, sw, est_params)
+        if fit_rows is None:
+            estimator = clone(self.estimator).fit(X, y, **est_params)
+        else:
+            estimator = clone(self.estimator).fit(
+                _safe_indexing(indexable(X)[0], fit_rows), y[fit_rows],
+                **params_of_rows(est_params, fit_rows, counts.shape[0]))
         if np.unique(np.asarray(y_index)[sw > 0]).shape[0] < 2:
             raise ValueError(
                 "Only one class has a positive `sample_weight`; at least two classes must "
@@ -1506,6 +1533,39 @@ class HeldOutClassifierBase(ClassifierMixin, MetaEstimatorMixin, BaseEstimator):
                 )
             out.append((train, test))
         return out
+
+    @staticmethod
+    def _folds_with_zero_rows(splits: list, fold: np.ndarray, pos: np.ndarray,
+                              pos_fold: np.ndarray, fit_rows: np.ndarray, sw: np.ndarray,
+                              index: np.ndarray | None) -> tuple[list, np.ndarray]:
+        """The folds of all rows from ``pos_fold``, the folds of the weighted rows ``pos`` with
+        their copies kept together among them (:meth:`_splits_keeping_cells` on those rows):
+        each row of weight 0 is held out in the fold of the first weighted row with its
+        features (``index``: :func:`feature_cell_index` of all rows), else in the fold it had
+        (in turn where the folds were renumbered). No zero row joins a training part, but the
+        rows of a class weighted 0 throughout (``fit_rows``), which join every one, as in
+        :meth:`_splits_of_weighted_rows`. ``splits`` and ``fold`` as given where nothing
+        moves."""
+        zero = np.flatnonzero(sw == 0)
+        n_folds = int(pos_fold.max()) + 1
+        zero_fold = fold[zero] if n_folds == len(splits) else np.arange(zero.shape[0]) % n_folds
+        if index is not None and zero.shape[0]:
+            index = np.asarray(index, dtype=np.intp)
+            cell_fold = np.full(int(index.max()) + 1, -1)
+            _, first = np.unique(index[pos], return_index=True)
+            cell_fold[index[pos][first]] = pos_fold[first]
+            joined = cell_fold[index[zero]]
+            zero_fold = np.where(joined >= 0, joined, zero_fold)
+        if np.array_equal(pos_fold, fold[pos]) and np.array_equal(zero_fold, fold[zero]):
+            return splits, fold
+        new = np.empty_like(fold)
+        new[pos] = pos_fold
+        new[zero] = zero_fold
+        keep = np.zeros(fold.shape[0], dtype=bool)
+        keep[fit_rows] = True
+        lone = np.flatnonzero(keep & (sw == 0))
+        return [(np.sort(np.concatenate([pos[pos_fold != i], lone])), np.flatnonzero(new == i))
+                for i in range(n_folds)], new
 
     def _splits_keeping_cells(
         self, splits: list, fold: np.ndarray, cells: np.ndarray, y_index: np.ndarray

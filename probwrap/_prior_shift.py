@@ -847,7 +847,13 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         if ho.n_folds == 0:
             self.predicted_with_ = "frozen"
         elif self._refit_here:
-            self._choose_predicting_models(X, est, ho.row_weight if table else None)
+            keep = None
+            if not table:
+                w = np.asarray(ho.sample_weight, dtype=float)
+                if w.ndim == 1 and np.any(w == 0) and np.any(w > 0):
+                    keep = np.flatnonzero(w > 0)
+            self._choose_predicting_models(X, est, ho.row_weight if table else None,
+                                           keep=keep)
         self._labelled_repeats = self._repeat_counts(
             X, est, ho.n_folds, _table_labels(ho) if table else None)
         self._refit_scored = None  # (the refit model's probabilities of X, read twice above)
@@ -1015,7 +1021,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         return proba
 
     def _choose_predicting_models(self, X: Any, est: PriorEstimator,
-                                  row_weight: np.ndarray | None = None) -> None:
+                                  row_weight: np.ndarray | None = None, *,
+                                  keep: np.ndarray | None = None) -> None:
         """After a cross-fit whose labelled rows are kept: which models' posteriors the
         calibration turns into ``predict_proba`` (``predict_with``; the rule of
         :class:`~probwrap.CalibrationWrapper`, on the spreads of the models' log-probabilities,
@@ -1026,12 +1033,20 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``_fold_point``; its estimate reads the fold models' own posteriors either way).
 
         ``row_weight``: a count table cross-fitted by its cases (since 5 December 2026): the spreads
-        are taken over ``X``'s rows weighted by their counts, as over the rows repeated."""
+        are taken over ``X``'s rows weighted by their counts, as over the rows repeated.
+        ``keep``: the rows of positive weight where some rows weigh 0, the only rows the
+        spreads are taken over (rows of weight 0 carry no information: until the evening of
+        5 December 2026 they took part here, and moved the choice between the refit and the
+        fold models away from the fit on the other rows, benchmarks/zero_weight_folds_check.py)."""
         from ._calibration_wrapper import _SPREAD_CHECK_MAX_ROWS
         from .calibration._logodds import clip_from_smallest, proba_to_log_proba
         from .shift._interval import fold_shares
 
+        if keep is not None:
+            X = _safe_indexing(indexable(X)[0], keep)
         n = est._src_fold.shape[0] if row_weight is None else row_weight.shape[0]
+        if keep is not None:
+            n = keep.shape[0]
         rows = X
         cw = None if row_weight is None else np.round(np.asarray(row_weight, dtype=float))
         if n > _SPREAD_CHECK_MAX_ROWS:  # evenly spaced rows: the check's cost stays bounded
