@@ -41,6 +41,7 @@ from ._validation import (
     costs_in_class_order,
     plain,
     power_of_two_unit,
+    warn_implied_positive,
 )
 from .decision import (
     PlugInCostAboveOneActionWarning,
@@ -309,6 +310,14 @@ class CostPolicyWrapper(_RuleFitting, HeldOutClassifierBase):
             ordered = bool(self.classes_[0] < self.classes_[1])
         except TypeError:  # labels of types that do not compare: nothing to expect
             return
+        if ordered:
+            what = ("binary cost shorthand (tp/fp/fn/tn)" if isinstance(self.costs, Mapping)
+                    else "single `cutoff`")
+            how = "fit on `y == {first}` (True is then the positive class)"
+            if isinstance(self.costs, Mapping):
+                how += (", or give the costs as a 2 x 2 matrix with one row per true class in "
+                        "`classes_` order and one column per action")
+            warn_implied_positive(self.classes_, what, how, stacklevel=4)
         if not ordered:
             first, second = (plain(c) for c in self.classes_)
             what = ("binary cost shorthand (tp/fp/fn/tn)" if isinstance(self.costs, Mapping)

@@ -34,7 +34,7 @@ from ._prior_shift_features import (
     skip_distributed_monitor,
 )
 from ._prior_shift_tallied import _tally_rows, tallied_adapt, tallied_monitor
-from ._validation import check_sample_weight, plain
+from ._validation import check_sample_weight, plain, warn_implied_positive
 from .shift import PriorEstimator, adjust_to_prior, check_prior, prior_by_batch
 from .shift._estimator import CALIBRATIONS, IMPRECISE_REACH, PRIOR_METHODS
 from .shift._repeats import ml_shares
@@ -650,6 +650,12 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 f"`target_prior` is a single number, which is only meaningful for two classes; "
                 f"give one entry per class in classes_ order ({classes.tolist()})."
             )
+        elif isinstance(prior, numbers.Real) and not isinstance(prior, bool):
+            warn_implied_positive(
+                classes, "single-number `target_prior`",
+                "give a dict keyed by label, {{{first}: " + f"{plain(prior)!r}" + ", {second}: "
+                + f"{1 - float(prior):.6g}" + "}}",
+                stacklevel=5)
         prior = check_prior(prior, k, name="target_prior")
         zero = [c for c, share in zip(classes.tolist(), prior, strict=True) if share == 0.0]
         if zero:

@@ -741,3 +741,67 @@ def case_rows(w: np.ndarray) -> np.ndarray | None:
     if counts is None:
         return None
     return np.repeat(np.arange(counts.shape[0]), counts)
+
+
+class ImpliedPositiveClassWarning(UserWarning):
+    """A binary setting that names no class was read for ``classes_[1]``, a text label.
+
+    The binary cost shorthand (``{"fp": .., "fn": ..}``), a single ``cutoff`` and a single-number
+    ``target_prior`` all refer to "the positive class", which scikit-learn's convention makes the
+    second of the sorted ``classes_``. For 0/1, -1/1 or False/True labels that is the one meant;
+    for text labels it is whichever sorts last (``'low'`` < ``'normal'``: ``'normal'`` is
+    "positive"), which is often not the outcome the user had in mind. The warning names the label
+    used and how to say it explicitly.
+    """
+
+
+#: Text label pairs whose second member is "positive" in plain reading: no warning for them.
+_NAMED_POSITIVE_PAIRS = frozenset({
+    ("no", "yes"), ("n", "y"), ("false", "true"), ("f", "t"), ("0", "1"),
+    ("negative", "positive"), ("neg", "pos"), ("-1", "1"),
+})
+
+
+def warn_implied_positive(classes: Any, what: str, explicit: str, *, stacklevel: int = 3) -> None:
+    """Warn when ``what`` (a binary setting naming no class) acts on a text ``classes_[1]``.
+
+    Parameters
+    ----------
+    classes : array-like of shape (2,)
+        The estimator's ``classes_``.
+    what : str
+        The setting, as the message names it (e.g. ``"binary cost shorthand (tp/fp/fn/tn)"``).
+    explicit : str
+        How to name the class explicitly instead (one sentence fragment; ``{first}`` and
+        ``{second}`` are replaced by the two labels' reprs).
+    stacklevel : int, default=3
+        Passed to :func:`warnings.warn`.
+
+    Examples
+    --------
+    >>> import warnings
+    >>> from probwrap._validation import warn_implied_positive
+    >>> with warnings.catch_warnings(record=True) as caught:
+    ...     warnings.simplefilter("always")
+    ...     warn_implied_positive(["low", "normal"], "single `target_prior`",
+    ...                           "give a dict such as {{{first}: 0.2, {second}: 0.8}}")
+    >>> "'normal'" in str(caught[0].message)
+    True
+    """
+    labels = list(classes)
+    if len(labels) != 2:
+        return
+    if any(isinstance(c, (bool, np.bool_, numbers.Number)) for c in labels):
+        return
+    first, second = (plain(c) for c in labels)
+    if (str(first).strip().lower(), str(second).strip().lower()) in _NAMED_POSITIVE_PAIRS:
+        return
+    how = explicit.format(first=repr(first), second=repr(second))
+    warnings.warn(
+        f"The {what} treats {second!r} as the positive class: the second of `classes_` "
+        f"({first!r}, {second!r}), which scikit-learn sorts, not the outcome the labels name. "
+        f"If {first!r} is the positive class, {how}. A setting that names the class itself "
+        "does not warn.",
+        ImpliedPositiveClassWarning,
+        stacklevel=stacklevel,
+    )

@@ -13,6 +13,7 @@ from sklearn.frozen import FrozenEstimator
 from sklearn.linear_model import LogisticRegression
 
 from probwrap import CostPolicyWrapper, PriorShiftWrapper
+from probwrap.decision import ImpliedPositiveClassWarning
 from probwrap.shift import adjust_to_prior
 
 
@@ -77,7 +78,12 @@ def test_known_target_prior_array_dict_and_float_agree():
     # classes_ are sorted, ["damaged", "intact"]; a float is the prevalence of classes_[1]
     for tp in ([0.2, 0.8], {"intact": 0.8, "damaged": 0.2}, 0.8):
         m = PriorShiftWrapper(LogisticRegression(), target_prior=tp, random_state=0)
-        outs.append(m.fit(X, labels).predict_proba(X_new))
+        if isinstance(tp, float):  # names no class: the warning says it is 'intact'
+            with pytest.warns(ImpliedPositiveClassWarning, match="treats 'intact' as the"):
+                m.fit(X, labels)
+        else:
+            m.fit(X, labels)
+        outs.append(m.predict_proba(X_new))
     np.testing.assert_allclose(outs[0], outs[1], atol=1e-15)
     np.testing.assert_allclose(outs[0], outs[2], atol=1e-15)
     expected = adjust_to_prior(m.calibrator_.predict_output(m.estimator_.predict_proba(X_new)),

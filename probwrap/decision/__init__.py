@@ -5,6 +5,7 @@ estimators. Cost matrices have one row per true class and one column per action;
 the cost of taking that action when that class is true, and negative entries are gains.
 """
 
+from .._validation import ImpliedPositiveClassWarning
 from ._bayes import bayes_actions, expected_costs
 from ._capacity import ActionBudget, action_savings, budget_actions, fit_action_budget
 from ._costs import (
@@ -49,6 +50,7 @@ __all__ = [
     "ClassOffsetResult",
     "CutoffInterval",
     "CutoffIntervalCoverageWarning",
+    "ImpliedPositiveClassWarning",
     "CutoffSearchResult",
     "GuaranteeUnreachableError",
     "GuaranteedCutoff",

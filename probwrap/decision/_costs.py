@@ -56,7 +56,9 @@ def binary_cost_matrix(costs: Mapping[str, float], *, name: str = "costs") -> np
     if unknown:
         raise ValueError(
             f"`{name}` has unknown key(s) {unknown}; the binary shorthand accepts only "
-            f"{list(BINARY_COST_KEYS)} (true/false positive, false/true negative)."
+            f"{list(BINARY_COST_KEYS)} (true/false positive, false/true negative). A full "
+            "cost matrix is a list of rows, one per true class in `classes_` order, each "
+            "holding the cost of every action: e.g. [[0, fp], [fn, 0]]."
         )
     values = {}
     for key in BINARY_COST_KEYS:

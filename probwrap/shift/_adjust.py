@@ -56,7 +56,14 @@ def check_prior(
         )
     total = arr.sum()
     if abs(total - 1.0) > PRIOR_SUM_TOL:
-        raise ValueError(f"`{name}` must sum to one; its entries sum to {total:.6g}.")
+        hint = ""
+        if total > 0 and abs(total - 1.0) <= 0.05:
+            # rounded shares (0.3 + 0.699, three classes of 0.333): say the one-line repair
+            # rather than renormalise silently, which could hide a mistyped share
+            shares = ", ".join(f"{v:.6g}" for v in arr / total)
+            hint = (f" If they are rounded shares, divide them by their sum: [{shares}]"
+                    f" (numpy: `p / p.sum()`).")
+        raise ValueError(f"`{name}` must sum to one; its entries sum to {total:.6g}.{hint}")
     return arr / total
 
 
