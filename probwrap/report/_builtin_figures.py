@@ -303,7 +303,7 @@ def builtin_figures(content: Any) -> dict[str, str]:
                 dispersion=bin_dispersion(getattr(c, "resampling", None)))
     if getattr(c, "kind", "binary") == "general":
         return figs
-    if c.cost_matrix is not None:
+    if c.cost_matrix is not None and c.cost_curve is not None:
         draw_figure(c, figs, "cost", cost_svg, c.cost_curve, chosen_cutoff=c.chosen_cutoff,
                     interval=c.cost_interval, plugin=c.plugin, key="cost",
                     chosen_name=c.chosen_name)

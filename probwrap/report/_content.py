@@ -443,6 +443,11 @@ def collect_content(
                     content.chosen_interval = (float(ci.low), float(ci.high))
                     content.interval_cutoff = float(policy.cost_curve_.cutoff)
                     content.interval_name = HELDOUT_LEAST_COST_NAME
+            else:
+                # the plug-in ("bayes") or a fixed cutoff keeps no held-out curve: draw the
+                # cost curve of this report's labelled rows, with the policy's cutoff marked
+                # (the cost figure had no curve and stopped the whole report before)
+                content.cost_curve = res
         else:
             content.chosen_cutoff = float(res.cutoff)
             content.cutoff_source = "the least-cost search on the labelled rows of this report"

@@ -475,7 +475,7 @@ def make_figures(c: Any) -> dict[str, str]:
         return figure_to_svg(pd_.figure_, "prev")
 
     draw_figure(c, figs, "reliability", reliability)
-    if c.cost_matrix is not None:
+    if c.cost_matrix is not None and c.cost_curve is not None:
         draw_figure(c, figs, "cost", cost)
     draw_figure(c, figs, "decision_curve", decision_curve)
     if c.batch_table is not None:
