@@ -756,7 +756,7 @@ class ImpliedPositiveClassWarning(UserWarning):
 
 
 #: Text label pairs whose second member is "positive" in plain reading: no warning for them.
-_NAMED_POSITIVE_PAIRS = frozenset({
+NAMED_POSITIVE_PAIRS = frozenset({
     ("no", "yes"), ("n", "y"), ("false", "true"), ("f", "t"), ("0", "1"),
     ("negative", "positive"), ("neg", "pos"), ("-1", "1"),
 })
@@ -794,7 +794,7 @@ def warn_implied_positive(classes: Any, what: str, explicit: str, *, stacklevel:
     if any(isinstance(c, (bool, np.bool_, numbers.Number)) for c in labels):
         return
     first, second = (plain(c) for c in labels)
-    if (str(first).strip().lower(), str(second).strip().lower()) in _NAMED_POSITIVE_PAIRS:
+    if (str(first).strip().lower(), str(second).strip().lower()) in NAMED_POSITIVE_PAIRS:
         return
     how = explicit.format(first=repr(first), second=repr(second))
     warnings.warn(

