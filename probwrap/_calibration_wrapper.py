@@ -971,9 +971,13 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
             return
         valid = (*CALIBRATION_METHODS, "auto")
         if not isinstance(self.method, str) or self.method not in valid:
+            hint = ""
+            if self.method == "sigmoid":
+                hint = (" scikit-learn's 'sigmoid' (CalibratedClassifierCV) is 'platt' here; "
+                        "'auto' chooses between the maps.")
             raise ValueError(
                 f"`method` must be one of {valid} or a CalibrationMap instance; got "
-                f"{plain(self.method)!r}."
+                f"{plain(self.method)!r}.{hint}"
             )
         if self.method == "auto":
             self._candidate_names()

@@ -138,3 +138,18 @@ def test_report_label_error_example_reads_yes_as_positive(tmp_path):
     with pytest.raises(ValueError, match=r"class_names=\('normal', 'low'\) if `y_prob` is the "
                                          r"probability of 'low'\."):
         write_report(tmp_path / "r.html", y_true=y, y_prob=np.full(y.shape[0], 0.3))
+
+
+def test_capacity_as_percent_and_sigmoid_name_get_the_repair():
+    from probwrap import CalibrationWrapper
+
+    X, y = _birthwt()
+    for given, advice in ((10, r"If 10 is a percentage, give 0\.1;"),
+                          ("10%", r"For 10% give 0\.1\.")):
+        with pytest.raises(ValueError, match=advice):
+            CostPolicyWrapper(_model(), costs={"fp": 1, "fn": 5}, capacity=given).fit(
+                X, y == "low")
+    with pytest.raises(ValueError, match=r"got 1000\.$"):  # not a plausible percentage
+        CostPolicyWrapper(_model(), costs={"fp": 1, "fn": 5}, capacity=1000).fit(X, y == "low")
+    with pytest.raises(ValueError, match=r"'sigmoid' \(CalibratedClassifierCV\) is 'platt' here"):
+        CalibrationWrapper(_model(), method="sigmoid").fit(X, y == "low")

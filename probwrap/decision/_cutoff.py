@@ -84,12 +84,26 @@ def check_capacity(capacity: Any, *, name: str = "capacity") -> float | None:
     """Validate a capacity (share of rows) in (0, 1]; ``None`` passes through."""
     if capacity is None:
         return None
+    text = capacity.strip() if isinstance(capacity, str) else None
     try:
         value = float(capacity)
     except (TypeError, ValueError) as exc:
-        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {plain(capacity)!r}.") from exc
+        hint = ""
+        if text is not None and text.endswith("%"):
+            try:
+                hint = f" For {text} give {float(text[:-1]) / 100:g}."
+            except ValueError:
+                pass
+        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got "
+                         f"{plain(capacity)!r}.{hint}") from exc
     if isinstance(capacity, bool) or not (0.0 < value <= 1.0):
-        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got {plain(capacity)!r}.")
+        hint = ""
+        if not isinstance(capacity, bool) and 1.0 < value <= 100.0:
+            # 10 is most often meant as 10 per cent: say so, never read it that way silently
+            hint = (f" If {plain(capacity)!r} is a percentage, give {value / 100:g}; a number of "
+                    "rows is a share too: rows / the number of rows expected.")
+        raise ValueError(f"`{name}` must be a share of rows in (0, 1]; got "
+                         f"{plain(capacity)!r}.{hint}")
     return value
 
 
