@@ -17,6 +17,7 @@ from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
 from probwrap import CostPolicyWrapper
+from probwrap.decision import ImpliedPositiveClassWarning
 
 
 class _Reordered:
@@ -66,10 +67,13 @@ def test_unsorted_classes_name_the_positive_class(models, kw):
     # flags exactly those whose "benign" probability is above the cutoff
     p_benign = model.predict_proba(X)[:, list(model.classes_).index("benign")]
     assert np.array_equal(w.predict(X) == "benign", p_benign > w.cutoff_)
-    # scikit-learn's sorted order gives no warning (positive class "malignant")
-    with warnings.catch_warnings():
-        warnings.simplefilter("error")
+    # scikit-learn's sorted order gives no unsorted-order warning (positive class "malignant");
+    # text labels name no positive class, so ImpliedPositiveClassWarning says which it is
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
         s = CostPolicyWrapper(FrozenEstimator(model), **kw).fit(X, y)
+    assert [type(c.message) for c in caught] == [ImpliedPositiveClassWarning]
+    assert "treats 'malignant' as the positive class" in str(caught[0].message)
     p_malignant = model.predict_proba(X)[:, list(model.classes_).index("malignant")]
     assert np.array_equal(s.predict(X) == "malignant", p_malignant > s.cutoff_)
 
