@@ -1774,7 +1774,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                 f"{names} spans all of [0, 1], so the estimate ({est}) is not informative: the "
                 "unlabelled rows and this model cannot pin that share down. predict_proba moves "
                 f"only as far as the shift evidence allows (adaptation_weight_ = "
-                f"{self.adaptation_weight_:.3g})." + (f" Why: {note}" if note else ""),
+                f"{self.adaptation_weight_:.3g}). Do not act on the estimate; more unlabelled "
+                "rows, or a model that separates the classes better, narrow the interval."
+                + (f" Why: {note}" if note else ""),
                 PriorNotIdentifiedWarning,
                 stacklevel=3,
             )

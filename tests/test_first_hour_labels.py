@@ -153,3 +153,17 @@ def test_capacity_as_percent_and_sigmoid_name_get_the_repair():
         CostPolicyWrapper(_model(), costs={"fp": 1, "fn": 5}, capacity=1000).fit(X, y == "low")
     with pytest.raises(ValueError, match=r"'sigmoid' \(CalibratedClassifierCV\) is 'platt' here"):
         CalibrationWrapper(_model(), method="sigmoid").fit(X, y == "low")
+
+
+def test_unidentified_prior_warning_says_what_to_do():
+    # birthwt: 126 labelled rows, adapt on the other 63; the interval spans [0, 1] and the
+    # warning used to stop at what predict_proba does, without the action docs/warnings.md gives
+    from probwrap.shift import PriorNotIdentifiedWarning
+
+    X, y = _birthwt()
+    fit = np.arange(y.shape[0]) % 3 != 0
+    model = PriorShiftWrapper(_model(), random_state=0).fit(X[fit], y[fit] == "low")
+    with pytest.warns(PriorNotIdentifiedWarning, match=r"spans all of \[0, 1\].*Do not act on "
+                                                       r"the estimate; more unlabelled rows"):
+        model.adapt(X[~fit])
+    assert model.adaptation_weight_ == 0.0
