@@ -85,6 +85,10 @@ FEW_ROWS = 30
 #: An interval on fewer effective labelled rows than this draws a FewLabelledRowsWarning (where
 #: benchmarks/shift.py --only=fewlabels measured coverage 2-6 points short on real data).
 FEW_LABELLED_ROWS = 100
+#: Under this many effective labelled rows of a class (common practice: the rule of five
+#: expected counts per cell of Cochran 1954, cited from memory), that warning adds that the
+#: shift test can reject too often (measured in benchmarks/promise_hunt31.py's evidence section).
+FEW_CLASS_LABELLED_ROWS = 5
 #: ``PriorShiftWrapper.adapt`` warns (ImprecisePriorWarning) when a class share's interval reaches
 #: further than this from the estimate: the distance at which benchmarks/prior_far_off.py counts
 #: an estimate as far off, so an estimate that far from the truth, with an interval that holds
@@ -1399,9 +1403,32 @@ class PriorEstimator(_Resampling):
             "cannot reveal, moves the estimate beyond the interval's allowance. On resampled "
             "real data with 30-60 labelled rows the nominal 90 % interval covered 84-92 % of "
             "the draws (docs/prior_shift.md, 'Coverage with few labelled rows'); read it as "
-            "optimistic, or label more rows.",
+            "optimistic, or label more rows." + self._few_class_rows_note(n_src),
             FewLabelledRowsWarning,
             stacklevel=3,
+        )
+
+    def _few_class_rows_note(self, n_src: float) -> str:
+        """The end of the few-labelled-rows warning where a class has fewer than
+        ``FEW_CLASS_LABELLED_ROWS`` effective labelled rows (its share of ``n_src``): the shift
+        test then compares the batches with a mean score over a handful of extreme rows, and
+        its p-values (which ``monitor``'s table and the alarm chart read) fall below the level
+        more often than stated (benchmarks/promise_hunt31.py; 5 December 2026)."""
+        prior = np.asarray(getattr(self, "source_prior_", ()), dtype=float)
+        if prior.size < 2:
+            return ""
+        j = int(np.argmin(prior))
+        rows = float(n_src) * float(prior[j])
+        if not rows < FEW_CLASS_LABELLED_ROWS:
+            return ""
+        names = self._names()
+        label = f"class {names[j]}" if names is not None else f"class index {j}"
+        return (
+            f" Only {rows:.3g} of them are of {label}: the shift test (its "
+            "p-value, and the alarm chart on its signed roots) can then reject more often than "
+            "its level. On ISLR's Default (3 % positives, a logistic model), 30 labelled rows "
+            "holding 1-2 positives rejected 9-10 % of batches drawn with no shift at the 5 % "
+            "level (5 % with 60 labelled rows)."
         )
 
     def _warn_boundary(self, ml: np.ndarray, p: np.ndarray | None, w: np.ndarray | None,
