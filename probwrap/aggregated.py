@@ -37,8 +37,15 @@ def _as_counts(values: Any, name: str) -> np.ndarray:
     arr = np.asarray(values, dtype=float)
     if arr.ndim != 1:
         raise ValueError(f"`{name}` must be 1-d of shape (n_groups,); got shape {arr.shape}.")
-    if not np.all(np.isfinite(arr)):
-        raise ValueError(f"`{name}` contains NaN or infinite values.")
+    bad = int(np.count_nonzero(~np.isfinite(arr)))
+    if bad:
+        # a named column (pandas or Dask Series, not an array's graph key) is named too
+        column = getattr(values, "name", None) if hasattr(values, "index") else None
+        where = f" (column {column!r})" if isinstance(column, str) else ""
+        raise ValueError(
+            f"`{name}`{where} contains NaN or infinite values: {bad} of {arr.shape[0]} "
+            "group(s); every group needs finite counts (filter or fill them first)."
+        )
     return arr
 
 

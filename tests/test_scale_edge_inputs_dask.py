@@ -184,3 +184,28 @@ def test_decimal_labels_are_read_as_numbers(cancer):
             with pytest.raises(ValueError, match=words.replace("[", r"\[").replace("]", r"\]")):
                 CalibrationWrapper(model, method="platt").fit(frame[list(X.columns)],
                                                               frame["lab"])
+
+
+def test_tally_counts_names_the_dask_column_with_missing_counts(cancer):
+    """Per-group counts as Dask columns: the tally is the in-memory one, and a null or NaN
+    count names its column and counts the bad groups (before: "`successes` contains NaN")."""
+    from probwrap.aggregated import tally_counts
+
+    model, X, y = cancer
+    s = model.decision_function(X)
+    k, n = y.to_numpy() * 3.0, np.full(len(y), 3.0)
+    groups = dd.from_pandas(pd.DataFrame({"s": s, "k": k, "n": n}), npartitions=3)
+    t = tally_counts(groups["s"], groups["k"], groups["n"])
+    np.testing.assert_allclose(t.counts, tally_counts(s, k, n).counts, rtol=1e-12)
+    holes = pd.Series(k, dtype="Float64").mask((y == 0).to_numpy())  # null (pd.NA) counts
+    missing = int((y == 0).sum())
+    assert int(holes.isna().sum()) == missing > 0
+    bad = dd.from_pandas(pd.DataFrame({"s": s, "k": holes, "n": n}), npartitions=3)
+    with pytest.raises(ValueError, match=rf"`successes` \(column 'k'\) contains NaN or "
+                                         rf"infinite values: {missing} of {len(y)} group"):
+        tally_counts(bad["s"], bad["k"], bad["n"])
+    trials = dd.from_pandas(pd.DataFrame({"s": s, "k": k, "n": np.where(y == 0, np.inf, n)}),
+                            npartitions=3)
+    with pytest.raises(ValueError, match=rf"`trials` \(column 'n'\) contains NaN or infinite "
+                                         rf"values: {int((y == 0).sum())} of"):
+        tally_counts(trials["s"], trials["k"], trials["n"])

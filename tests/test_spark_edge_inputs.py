@@ -1,13 +1,13 @@
 """Awkward Spark inputs, in one test on the shared session: a decimal (SQL ``DECIMAL``) label
 column, 20 rows spread over 8 partitions (most of them empty), and null scores given to
-``tally_scores`` and ``tally_counts``.
+``tally_scores`` and ``tally_counts`` (and null or NaN counts given to ``tally_counts``).
 
 Before 5 December 2026 a ``DecimalType`` label column was refused by every wrapper as "numbers
 in an object array" (and by ``tally_scores`` as "dtype object"), and a null score was reported
 as a NaN at an index within one chunk of a partition, naming no column. Now decimal labels are
 read as their numbers (the fit equals the in-memory fit of the integer labels), and a null
-score names its column. Data: scikit-learn's bundled breast cancer table (five columns); a
-logistic regression fitted on its first 200 rows, held out on the rest.
+score or count names its column. Data: scikit-learn's bundled breast cancer table (five
+columns); a logistic regression fitted on its first 200 rows, held out on the rest.
 """
 
 from __future__ import annotations
@@ -82,6 +82,14 @@ def test_decimal_labels_sparse_partitions_and_null_scores(spark):
     counts = spark.createDataFrame(pd.DataFrame({"s": s, "k": yh * 3.0, "n": np.full(369, 3.0)}))
     t = tally_counts(counts, "k", "n")
     np.testing.assert_allclose(t.counts, tally_counts(s, yh * 3.0, np.full(369, 3.0)).counts)
-    counts = counts.withColumn("s", F.when(F.col("k") == 0, F.lit(None)).otherwise(F.col("s")))
+    nulls = counts.withColumn("s", F.when(F.col("k") == 0, F.lit(None)).otherwise(F.col("s")))
     with pytest.raises(ValueError, match=r"Spark column 's' has \d+ NaN or null value"):
-        tally_counts(counts, "k", "n")
+        tally_counts(nulls, "k", "n")
+    # a null or NaN count names its Spark column and counts its rows (before: "`successes`
+    # contains NaN"); one partition, so the count is that of the whole column
+    zeros = int(np.sum(yh == 0))
+    for col, name, bad in (("k", "successes", F.lit(None)), ("n", "trials", F.lit(float("nan")))):
+        holes = counts.withColumn(col, F.when(F.col("k") == 0, bad).otherwise(F.col(col)))
+        with pytest.raises(ValueError, match=rf"`{name}`: the Spark column '{col}' has {zeros} "
+                                             r"NaN, null or infinite value\(s\)"):
+            tally_counts(holes.coalesce(1), "k", "n")

@@ -469,6 +469,7 @@ def _tally_partitions(
                     t = flush()
                     total = t if total is None else total.merge(t)
             except Exception as exc:  # noqa: BLE001 - raised on the driver (see _WorkerError)
+                _drain(batches)
                 yield pd.DataFrame({"partition": [part], "tally": [_failure(exc)],
                                     "dropped": [False]})
                 return
@@ -496,6 +497,20 @@ def _tally_partitions(
         # sends every partition's rows, so the fit is that of the rows, as in memory
         tally, _ = run(limit)
     return tally
+
+
+def _drain(batches: Any) -> None:
+    """Read the rest of a partition's batches after a refused batch. PySpark's worker is reused
+    for the next task only when its input was read to the end (``pyspark/worker.py``: otherwise
+    it tells the JVM not to reuse it and exits), so a user error that left rows unread made the
+    next Spark job start new Python workers (about 8 s each under load on a 2-core machine).
+    Reading costs at most what the tally would have; a second failure while reading is left to
+    the first one's report."""
+    try:
+        for _ in batches:
+            pass
+    except Exception:  # noqa: BLE001 - the first error is the one reported
+        pass
 
 
 def _score_values(pdf: Any, score: str) -> np.ndarray:
@@ -564,10 +579,22 @@ def spark_tally_scores(
     return tally
 
 
+def _count_values(pdf: Any, column: str, name: str) -> np.ndarray:
+    """A count column of one Arrow batch as floats, refused with its column named (and its bad
+    rows counted) when it holds nulls, NaN or infinities, as :func:`_score_values` does."""
+    v = pdf[column].to_numpy(dtype=float, na_value=np.nan)
+    bad = int(np.count_nonzero(~np.isfinite(v)))
+    if bad:
+        raise ValueError(
+            f"`{name}`: the Spark column {column!r} has {bad} NaN, null or infinite value(s) in "
+            "a partition; every group needs finite counts (filter or fill them first)."
+        )
+    return v
+
+
 def _convert_counts(pdf: Any, spec: tuple) -> tuple:
     score, succ, trials, check = spec
-    k, n = check(pdf[succ].to_numpy(dtype=float, na_value=np.nan),
-                 pdf[trials].to_numpy(dtype=float, na_value=np.nan))
+    k, n = check(_count_values(pdf, succ, "successes"), _count_values(pdf, trials, "trials"))
     s = _score_values(pdf, score)
     return np.repeat(s, 2), np.tile([1, 0], k.shape[0]), np.column_stack([k, n - k]).ravel()
 
