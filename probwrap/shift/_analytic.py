@@ -299,6 +299,11 @@ def class_score_moments(
 #: docs/evidence/prior_shift_log.md).
 SPREAD_FLOOR = True
 
+#: A class's own score variance at most this share of its second moment is read as none by
+#: :func:`floor_class_spread` (the variance is a difference of second moments, exact to about
+#: 1e-16 of them in double precision; 1e-9 leaves a wide margin and no real spread).
+SPREAD_ROUNDING = 1e-9
+
 
 def implied_class_covs(
     proba: np.ndarray, w: np.ndarray, source_prior: np.ndarray,
@@ -339,12 +344,30 @@ def floor_class_spread(class_moments: tuple, implied: np.ndarray) -> tuple:
     covs = np.array(covs, dtype=float, copy=True)
     for c in range(covs.shape[0]):
         own = np.diag(covs[c])
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = np.where(own > 0, np.diag(implied[c]) / np.maximum(own, 1e-300), 1.0)
-        f = float(np.max(ratio)) if ratio.size else 1.0
-        if not np.any(own > 0):  # no spread of its own (a class of one row): the implied one
+        imp = np.diag(np.asarray(implied[c], dtype=float))
+        # a spread within rounding of zero is none: the covariance is a difference of second
+        # moments (class_score_sums), so a class whose labelled rows all have one score (a
+        # class the model separates, its posteriors at one floor) gets entries of about
+        # 1e-16 x the second moment, of either sign and moved by the weights' scale;
+        # scaling those up by implied / own (1e18) made the interval noise (heplots' peng,
+        # 112 labelled rows, naive Bayes: the same weights x 1/112 took a share's interval
+        # from [0.37, 0.57] to [0.007, 0.99]; docs/evidence/prior_shift_log.md, "Prior-shift
+        # hunt on twelve unused sets and little-used models (session 31)")
+        live = own > SPREAD_ROUNDING * (np.abs(own) + np.asarray(means[c], dtype=float) ** 2)
+        if not np.any(live):  # no spread of its own (a class of one row, or of one score)
             covs[c] = np.array(implied[c], dtype=float)
-        elif np.isfinite(f) and f > 1.0:
+            continue
+        if np.any(~live & (imp > own)):
+            # a direction with no spread of its own: the implied matrix, scaled up where the
+            # class's own spread is larger in a direction it has (positive semi-definite)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                up = np.where(live & (imp > 0), own / np.maximum(imp, 1e-300), 1.0)
+            covs[c] = np.array(implied[c], dtype=float) * max(1.0, float(np.max(up)))
+            continue
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = np.where(live, imp / np.maximum(own, 1e-300), 1.0)
+        f = float(np.max(ratio)) if ratio.size else 1.0
+        if np.isfinite(f) and f > 1.0:
             covs[c] = covs[c] * f
     return means, covs, n_c
 
