@@ -38,7 +38,7 @@ worse than no adjustment -- each quiet when ``adapt`` raised no warning. ``tally
 kind, the cells with and without a warning, by model and variant.
 
 Run: nice python benchmarks/shift_real_hunt31.py --quick         (seed 1, 150 labelled rows,
-                                                                  tree and svc: 216 cells)
+                                                                  tree and svc: 176 cells)
      nice python benchmarks/shift_real_hunt31.py [--seeds 2] [--seed-start 1] [--sets NAME ...]
                                                  [--models tree svc] [--out FILE.csv]
      nice python benchmarks/shift_real_hunt31.py --classify F1.csv F2.csv
