@@ -56,7 +56,9 @@ def test_frozen_temperature_above_the_class_shares_is_passed_over():
     X, y, fit, cal, test = _faithful_faces_frozen_draw()
     model = LinearDiscriminantAnalysis().fit(X.iloc[fit], y[fit])
     Xc, yc, Xt, yt = X.iloc[cal], y[cal], X.iloc[test], y[test]
-    est = CalibrationWrapper(FrozenEstimator(model)).fit(Xc, yc)
+    # fixed folds: with random_state=None the folds follow NumPy's global state, and on 10 of 40
+    # global seeds these rows' folds do not show the situation (the test failed after other tests)
+    est = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc, yc)
     scores = est.method_scores_
     # the situation: the temperature is not the best map and the class shares beat it
     best = min((k for k in scores if k != "class_shares"), key=lambda k: scores[k][0])
@@ -71,7 +73,7 @@ def test_frozen_temperature_above_the_class_shares_is_passed_over():
     ours, theirs = _log_loss(yt, est.predict_proba(Xt)), _log_loss(yt, sig.predict_proba(Xt))
     assert ours <= 1.10 * theirs
     # the temperature it passed over is the worse of the two here
-    named = CalibrationWrapper(FrozenEstimator(model), method="temperature").fit(Xc, yc)
+    named = CalibrationWrapper(FrozenEstimator(model), method="temperature", random_state=0).fit(Xc, yc)
     assert _log_loss(yt, named.predict_proba(Xt)) > ours
 
 
