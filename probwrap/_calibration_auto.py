@@ -204,7 +204,7 @@ _PASS_OVER_TEMPERATURE_BELOW_SHARES = True
 #: shares' 0.617, test log loss 1.10-1.25x scikit-learn's sigmoid (MLP, LDA, ridge, boosting);
 #: on the 27 frozen cells of benchmarks/hunt31_sweep.py where the rule applies, 1.023 -> 1.002x
 #: the sigmoid (geometric mean), quiet cells above 1.10x 4 -> 0
-#: (docs/evidence/small_data_log.md, "The session-31 calibration hunt"). ``False`` switches the
+#: (docs/evidence/small_data_log.md, the calibration hunt of benchmarks/hunt31_sweep.py). ``False`` switches the
 #: rule off.
 _PASS_OVER_FROZEN_TEMPERATURE_ABOVE_SHARES = True
 

@@ -361,8 +361,8 @@ class CalibrationWrapper(_AutoChoice, HeldOutClassifierBase):
         sample of the rows (above 20,000 held-out rows); ``method_notes_["temperature"]`` says
         when the one-standard-error rule passed over a softening temperature that scored above
         the class shares (two classes; docs/small_data.md), or, for a frozen model, any
-        temperature that did (docs/evidence/small_data_log.md, "The session-31 calibration
-        hunt");
+        temperature that did (docs/evidence/small_data_log.md, the calibration hunt of
+        benchmarks/hunt31_sweep.py);
         ``method_notes_["temperature"]`` /
         ``["vector_scaling"]`` say when a sharpening temperature was capped at 1 or vector
         scaling replaced by temperature scaling, the fold models' scores being near-constant

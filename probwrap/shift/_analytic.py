@@ -351,8 +351,8 @@ def floor_class_spread(class_moments: tuple, implied: np.ndarray) -> tuple:
         # 1e-16 x the second moment, of either sign and moved by the weights' scale;
         # scaling those up by implied / own (1e18) made the interval noise (heplots' peng,
         # 112 labelled rows, naive Bayes: the same weights x 1/112 took a share's interval
-        # from [0.37, 0.57] to [0.007, 0.99]; docs/evidence/prior_shift_log.md, "Prior-shift
-        # hunt on twelve unused sets and little-used models (session 31)")
+        # from [0.37, 0.57] to [0.007, 0.99]; docs/evidence/prior_shift_log.md, the prior-shift
+        # hunt of benchmarks/shift_real_hunt31.py on twelve unused sets)
         live = own > SPREAD_ROUNDING * (np.abs(own) + np.asarray(means[c], dtype=float) ** 2)
         if not np.any(live):  # no spread of its own (a class of one row, or of one score)
             covs[c] = np.array(implied[c], dtype=float)
