@@ -854,12 +854,16 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             self.predicted_with_ = "frozen"
         elif self._refit_here:
             keep = None
+            weight = None
             if not table:
                 w = np.asarray(ho.sample_weight, dtype=float)
                 if w.ndim == 1 and np.any(w == 0) and np.any(w > 0):
                     keep = np.flatnonzero(w > 0)
+                kept_w = w if keep is None else w[keep]
+                if kept_w.ndim == 1 and kept_w.size and np.ptp(kept_w) > 0:
+                    weight = kept_w  # unequal weights: the check weighs the rows by them
             self._choose_predicting_models(X, est, ho.row_weight if table else None,
-                                           keep=keep)
+                                           keep=keep, sample_weight=weight)
         self._labelled_repeats = self._repeat_counts(
             X, est, ho.n_folds, _table_labels(ho) if table else None)
         self._refit_scored = None  # (the refit model's probabilities of X, read twice above)
@@ -1028,7 +1032,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
 
     def _choose_predicting_models(self, X: Any, est: PriorEstimator,
                                   row_weight: np.ndarray | None = None, *,
-                                  keep: np.ndarray | None = None) -> None:
+                                  keep: np.ndarray | None = None,
+                                  sample_weight: np.ndarray | None = None) -> None:
         """After a cross-fit whose labelled rows are kept: which models' posteriors the
         calibration turns into ``predict_proba`` (``predict_with``; the rule of
         :class:`~probwrap.CalibrationWrapper`, on the spreads of the models' log-probabilities,
@@ -1043,7 +1048,14 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``keep``: the rows of positive weight where some rows weigh 0, the only rows the
         spreads are taken over (rows of weight 0 carry no information: until the evening of
         5 December 2026 they took part here, and moved the choice between the refit and the
-        fold models away from the fit on the other rows, benchmarks/zero_weight_folds_check.py)."""
+        fold models away from the fit on the other rows, benchmarks/zero_weight_folds_check.py).
+        ``sample_weight``: unequal weights of those rows (``None`` when they are all alike):
+        the spreads and ``fold_disagreement_`` weigh each row by it, as
+        :class:`~probwrap.CalibrationWrapper`'s check does (the same
+        :func:`~probwrap._calibration_wrapper.fold_disagreement`), so a row of weight 2 counts as
+        the row twice and scaling every weight changes nothing. Until the evening of
+        5 December 2026 they were counted as single rows
+        (tests/test_prior_shift_fold_disagreement_weights.py)."""
         from ._calibration_wrapper import _SPREAD_CHECK_MAX_ROWS
         from .calibration._logodds import clip_from_smallest, proba_to_log_proba
         from .shift._interval import fold_shares
@@ -1055,6 +1067,8 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             n = keep.shape[0]
         rows = X
         cw = None if row_weight is None else np.round(np.asarray(row_weight, dtype=float))
+        if cw is None and sample_weight is not None:
+            cw = np.asarray(sample_weight, dtype=float)
         if n > _SPREAD_CHECK_MAX_ROWS:  # evenly spaced rows: the check's cost stays bounded
             pick = np.linspace(0, n - 1, _SPREAD_CHECK_MAX_ROWS).astype(np.intp)
             rows = _safe_indexing(indexable(X)[0], pick)
