@@ -1055,7 +1055,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         :func:`~probwrap._calibration_wrapper.fold_disagreement`), so a row of weight 2 counts as
         the row twice and scaling every weight changes nothing. Until the evening of
         5 December 2026 they were counted as single rows
-        (tests/test_prior_shift_fold_disagreement_weights.py)."""
+        (benchmarks/fold_disagreement_weights.py)."""
         from ._calibration_wrapper import _SPREAD_CHECK_MAX_ROWS
         from .calibration._logodds import clip_from_smallest, proba_to_log_proba
         from .shift._interval import fold_shares
