@@ -34,7 +34,15 @@ __all__ = [
 
 
 def _as_counts(values: Any, name: str) -> np.ndarray:
-    arr = np.asarray(values, dtype=float)
+    try:
+        arr = np.asarray(values, dtype=float)
+    except TypeError:
+        # a nullable pandas column (Float64, Int64) holding pd.NA: older pandas (2.1) refuse
+        # float() on it, so read its missing entries as NaN and refuse them by name below
+        local = values.compute() if hasattr(values, "compute") else values
+        if not hasattr(local, "to_numpy"):
+            raise
+        arr = local.to_numpy(dtype=float, na_value=np.nan)
     if arr.ndim != 1:
         raise ValueError(f"`{name}` must be 1-d of shape (n_groups,); got shape {arr.shape}.")
     bad = int(np.count_nonzero(~np.isfinite(arr)))

@@ -132,12 +132,18 @@ def test_scaling_every_weight_changes_nothing(monkeypatch, name):
 @pytest.mark.parametrize("same", [None, 1.0, 3.0])
 def test_equal_weights_read_as_no_weights(monkeypatch, same):
     """Absent or equal weights: the check is given no weights at all, so its statistic is
-    bit-for-bit the unweighted one (the benchmarks without weights are unaffected)."""
+    the unweighted one (the benchmarks without weights are unaffected). Bit for bit without
+    weights and with weights of 1; with weights of 3 the naive Bayes models themselves are fitted
+    with those weights, which under scikit-learn 1.6.1 moves their scores in the last bits, so
+    there the statistic is compared to 1e-12."""
     X, y, _ = _data()
     w = None if same is None else np.full(150, same)
     m, (scores, seen_w) = _fit(monkeypatch, _model("naive_bayes"), X, y, w)
     assert seen_w is None
     ref, _ = _fit(monkeypatch, _model("naive_bayes"), X, y, None)
-    assert m.fold_disagreement_ == ref.fold_disagreement_
+    if same in (None, 1.0):
+        assert m.fold_disagreement_ == ref.fold_disagreement_
+    else:
+        np.testing.assert_allclose(m.fold_disagreement_, ref.fold_disagreement_, rtol=1e-12)
     np.testing.assert_allclose(m.fold_disagreement_,
                                _by_hand_repeated(scores, np.ones(150, dtype=int)), rtol=1e-10)
