@@ -44,6 +44,7 @@ from typing import Any
 import numpy as np
 from sklearn.utils import get_tags
 
+from ._validation import loaded_classes as _loaded_classes
 from ._validation import plain
 
 __all__ = ["check_feature_input"]
@@ -61,26 +62,26 @@ def _first_step(estimator: Any) -> Any:
     is returned as it is: :func:`_steps_given_X` reads its parts. Any other step around an
     estimator: None, nothing is judged (a ``GridSearchCV`` or ``FeatureUnion`` of text
     vectorisers reports the tags of a 2-d model)."""
-    from sklearn.calibration import CalibratedClassifierCV
-    from sklearn.compose import ColumnTransformer
-    from sklearn.ensemble import BaseEnsemble
-    from sklearn.frozen import FrozenEstimator
-    from sklearn.multiclass import OneVsRestClassifier
-    from sklearn.pipeline import Pipeline
+    # (classes of modules not imported yet are left out: nothing can be their instance)
+    passing = (*_loaded_classes("sklearn.frozen", "FrozenEstimator"),
+               *_loaded_classes("sklearn.calibration", "CalibratedClassifierCV"),
+               *_loaded_classes("sklearn.multiclass", "OneVsRestClassifier"))
+    judged = (*_loaded_classes("sklearn.ensemble", "BaseEnsemble"),
+              *_loaded_classes("sklearn.compose", "ColumnTransformer"))
+    pipeline = _loaded_classes("sklearn.pipeline", "Pipeline")
 
     for _ in range(20):  # nesting depth; a loop of references cannot hang the fit
-        if isinstance(estimator, Pipeline):
+        if isinstance(estimator, pipeline):
             steps = [s for _, s in estimator.steps if s is not None and s != "passthrough"]
             if not steps:
                 return None
             estimator = steps[0]
-        elif isinstance(estimator, (FrozenEstimator, CalibratedClassifierCV,
-                                    OneVsRestClassifier)) or (
+        elif isinstance(estimator, passing) or (
                 type(estimator).__module__.startswith(("probwrap.", "sklearn.model_selection."))
                 and type(estimator).__name__.endswith(("Wrapper", "SearchCV"))
                 and hasattr(estimator, "estimator")):
             estimator = estimator.estimator
-        elif isinstance(estimator, (BaseEnsemble, ColumnTransformer)):
+        elif isinstance(estimator, judged):
             return estimator
         elif _parts_given_X(estimator) is not None:
             return estimator
@@ -98,18 +99,11 @@ def _parts_given_X(step: Any) -> list | None:
     ``VotingClassifier`` / ``VotingRegressor`` or ``StackingClassifier`` /
     ``StackingRegressor`` (dropped ones left out; a stack's final estimator sees the inner
     steps' predictions, not ``X``), or None for any other step."""
-    from sklearn.ensemble import (
-        StackingClassifier,
-        StackingRegressor,
-        VotingClassifier,
-        VotingRegressor,
-    )
-    from sklearn.pipeline import FeatureUnion
-
-    if isinstance(step, FeatureUnion):
+    if isinstance(step, _loaded_classes("sklearn.pipeline", "FeatureUnion")):
         parts = [s for _, s in step.transformer_list]
-    elif isinstance(step, (VotingClassifier, VotingRegressor, StackingClassifier,
-                           StackingRegressor)):
+    elif isinstance(step, _loaded_classes("sklearn.ensemble", "VotingClassifier",
+                                          "VotingRegressor", "StackingClassifier",
+                                          "StackingRegressor")):
         parts = [s for _, s in step.estimators]
     else:
         return None

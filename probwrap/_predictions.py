@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from ._validation import plain, row_sum, whole_counts
+from ._validation import loaded_classes, plain, row_sum, whole_counts
 
 __all__ = ["HeldOutPredictions", "ModelOutputError", "check_model_columns",
            "check_model_probabilities", "resolve_response", "rows_summing_to_one",
@@ -106,18 +106,20 @@ def _answers(estimator: Any, method: str) -> bool:
     """
     if hasattr(estimator, method):
         return True
-    from sklearn.ensemble import StackingClassifier
-    from sklearn.pipeline import Pipeline
+    # (classes of modules not imported yet are left out: nothing can be their instance, and a
+    # fit of any other model does not import sklearn.ensemble for this check)
+    stacking = loaded_classes("sklearn.ensemble", "StackingClassifier")
+    pipeline = loaded_classes("sklearn.pipeline", "Pipeline")
 
     inner = estimator
     for _ in range(8):  # through pipelines and searches, as hasattr itself looks
-        if isinstance(inner, Pipeline) and inner.steps:
+        if isinstance(inner, pipeline) and inner.steps:
             inner = inner.steps[-1][1]
         elif hasattr(inner, "param_grid") or hasattr(inner, "param_distributions"):
             inner = getattr(inner, "estimator", None)
         else:
             break
-    if (isinstance(inner, StackingClassifier) and inner.final_estimator is None
+    if (isinstance(inner, stacking) and inner.final_estimator is None
             and not hasattr(inner, "final_estimator_")):
         from sklearn.linear_model import LogisticRegression
 

@@ -77,14 +77,33 @@ def choice_weights(w: np.ndarray, ho: object = None) -> np.ndarray:
                            or getattr(ho, "tally_cases", False)):
         return w
     w = np.asarray(w, dtype=float)
-    positive = w > 0
-    if not positive.any() or whole_counts(w) is not None:
+    if w.size and float(w.min()) == float(w.max()):
+        # equal weights (the unit weights of a fit without weights are one value repeated, a
+        # read-only view): never a count table (whole_counts), and w / max is exactly 1, so
+        # Kish's size is the rows and the rescaled weights are exactly 1. Decided without the
+        # row-long temporaries below (they raised the tuned CostPolicyWrapper fit's peak memory
+        # from 3.8x to 5.4x the scores at 1e6 rows: benchmarks/performance.py, docs/performance.md)
+        c = float(w.flat[0])
+        if not c > 0.0 or np.isclose(1.0, c, rtol=1e-12, atol=0.0):
+            return w
+        return np.ones(w.shape)
+    if not np.any(w > 0) or whole_counts(w) is not None:
         return w
-    u = w / float(w.max())  # scaled first: the sum of squares cannot overflow or underflow
-    out = u * (u.sum() / (u @ u))
-    if np.allclose(out, w, rtol=1e-12, atol=0.0):
+    out = w / float(w.max())  # scaled first: the sum of squares cannot overflow or underflow
+    out *= out.sum() / (out @ out)  # (in place: the same values as a new product)
+    if _close_to(out, w, rtol=1e-12):
         return w  # unit weights, or already on Kish's scale
     return out
+
+
+def _close_to(a: np.ndarray, b: np.ndarray, *, rtol: float, block: int = 65_536) -> bool:
+    """``np.allclose(a, b, rtol=rtol, atol=0.0)`` for finite 1-d arrays of one length, block by
+    block (``np.allclose`` makes several temporaries as long as the arrays)."""
+    for start in range(0, a.shape[0], block):
+        x, y = a[start:start + block], b[start:start + block]
+        if not np.all(np.abs(x - y) <= rtol * np.abs(y)):
+            return False
+    return True
 
 
 def warn_count_reading(
