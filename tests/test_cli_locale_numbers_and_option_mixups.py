@@ -81,11 +81,18 @@ def test_tab_separated_decimal_commas_read_as_the_plain_file(cancer, tmp_path, c
                        "--label-column", "y", "--out", tmp_path / "m.json")
     assert code == 0, err
     code, _, err = run(capsys, "calibrate", "apply", "--map", tmp_path / "m.json", "--scores",
+                       tab, "--score-column", "lr", "--out", tmp_path / "out.tsv")
+    assert code == 0, err
+    header, first = (tmp_path / "out.tsv").read_text().splitlines()[:2]
+    assert header.split("\t")[-1] == "calibrated_probability"
+    assert "," in first.split("\t")[-1] and "." not in first
+    # to a .csv name: separated by ';', as CSV files with decimal commas are
+    code, _, err = run(capsys, "calibrate", "apply", "--map", tmp_path / "m.json", "--scores",
                        tab, "--score-column", "lr", "--out", tmp_path / "out.csv")
     assert code == 0, err
     header, first = (tmp_path / "out.csv").read_text().splitlines()[:2]
-    assert header.split("\t")[-1] == "calibrated_probability"
-    assert "," in first.split("\t")[-1] and "." not in first
+    assert header.split(";")[-1] == "calibrated_probability" and "\t" not in first
+    assert "," in first.split(";")[-1] and "." not in first
 
 
 def test_time_column_with_dots_between_thousands_is_not_read_as_decimals(cancer, tmp_path,

@@ -131,8 +131,9 @@ def test_percent_sign_and_thousands_separators_are_explained(scored, capsys):
     code, _, err = _cutoff(capsys, path)
     assert code == 1
     first = f"{100 * frame['score'].iloc[0]:.1f}%"
-    assert f"'{first}' is not a finite number; a percent sign is not read" in err
-    assert f"({first} as {float(first[:-1]) / 100:.15g})" in err
+    assert f"'{first}' is not a finite number; a percent sign is read only with --scale percent" \
+        in err
+    assert f"(which reads {first} as {float(first[:-1]) / 100:.15g})" in err
 
     path = root / "thousands.csv"
     frame.assign(w=[f"{1000 * v:,.0f}" for v in frame["w"]]).to_csv(path, index=False)
@@ -237,13 +238,15 @@ def test_spreadsheet_sep_line_is_read_and_written_back(scored, capsys, tmp_path,
                        "--label-column", "label", "--method", "platt",
                        "--out", tmp_path / "map.json")
     assert code == 0, err
+    # a tab-separated file is written back as .tsv (a .csv name is written with commas)
+    out = tmp_path / ("o.tsv" if sep == "\t" else "o.csv")
     code, _, err = run(capsys, "calibrate", "apply", "--map", tmp_path / "map.json",
-                       "--scores", path, "--score-column", "score", "--out", tmp_path / "o.csv")
+                       "--scores", path, "--score-column", "score", "--out", out)
     assert code == 0, err
-    lines = (tmp_path / "o.csv").read_text(encoding="utf-8").splitlines()
+    lines = out.read_text(encoding="utf-8").splitlines()
     assert lines[0] == f"sep={sep}"
     assert lines[1].split(sep) == ["score", "label", "w", "calibrated_probability"]
-    back = pd.read_csv(tmp_path / "o.csv", skiprows=1, sep=sep, decimal=decimal,
+    back = pd.read_csv(out, skiprows=1, sep=sep, decimal=decimal,
                        float_precision="round_trip")
     np.testing.assert_array_equal(back["score"].to_numpy(), frame["score"].to_numpy())
 

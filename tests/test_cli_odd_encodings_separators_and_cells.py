@@ -66,7 +66,13 @@ def test_pipe_separated_file_read_and_written_back(cancer, tmp_path, capsys):
     out = tmp_path / "out.csv"
     assert run(capsys, "calibrate", "apply", "--map", mapped, "--scores", piped,
                "--score-column", "score", "--out", out)[0] == 0
-    assert out.read_text().splitlines()[0] == "score|y|calibrated_probability"
+    # a .csv name is written with commas (since 5 December 2026); standard output, which has
+    # no extension, keeps the bars
+    assert out.read_text().splitlines()[0] == "score,y,calibrated_probability"
+    code, text, err = run(capsys, "calibrate", "apply", "--map", mapped, "--scores", piped,
+                          "--score-column", "score", "--out", "-")
+    assert code == 0, err
+    assert text.splitlines()[0] == "score|y|calibrated_probability"
 
 
 def test_apply_keeps_an_empty_header_cell(cancer, tmp_path, capsys):

@@ -45,6 +45,7 @@ from ._common import (
 from ._files import (
     check_out_suffix,
     check_writable,
+    output_separator,
     replaced_note,
     to_stdout,
     write_table,
@@ -166,7 +167,8 @@ def _percent_column(frame: Any, column: str, path: str | Path, *, flag: str,
     """``--scale percent``: the column's numbers in [0, 100] divided by 100 (a new array; the
     table is not changed), or a DataError naming the first row outside; every value in [0, 1]
     (at least 10 rows, not all equal) draws a warning that they look like probabilities."""
-    values = numeric_column(frame, column, path, flag=flag, allow_missing=allow_missing)
+    values = numeric_column(frame, column, path, flag=flag, allow_missing=allow_missing,
+                            percent_sign=True)
     with np.errstate(invalid="ignore"):
         bad = (values < 0.0) | (values > 100.0)
     if bad.any():
@@ -474,6 +476,29 @@ def _missing_rows_text(path: Any, rows: np.ndarray) -> str:
     return rows_text(path, rows)
 
 
+#: separators as a summary line names them
+_SEPARATOR_WORDS = {",": "commas", ";": "semicolons", "\t": "tabs"}
+
+
+def _with_commas(sep: str, dialect: dict[str, Any]) -> str:
+    return " with decimal commas" if sep == ";" and dialect.get("decimal") == "," else ""
+
+
+def _separator_note(out: Any, dialect: dict[str, Any] | None) -> str:
+    """", separated by commas as .csv files are (the file read was separated by tabs)" when
+    the output's extension chose another separator than the CSV file read had (see
+    :func:`._files.output_separator`); "" otherwise (standard output keeps the input's)."""
+    if not dialect or to_stdout(out):
+        return ""
+    was = dialect.get("sep", ",")
+    now = output_separator(out, was, dialect.get("decimal", "."))
+    if now == was:
+        return ""
+    return (f", separated by {_SEPARATOR_WORDS.get(now, repr(now))} as "
+            f"{Path(out).suffix.lower()} files{_with_commas(now, dialect)} are (the file read was separated by "
+            f"{_SEPARATOR_WORDS.get(was, repr(was))})")
+
+
 def _apply(args: argparse.Namespace) -> int:
     from pandas.api.types import is_numeric_dtype
 
@@ -485,6 +510,11 @@ def _apply(args: argparse.Namespace) -> int:
         frame = read_table(args.scores, exact=[args.score_column], as_text=True)
         scores = read_scores(frame, args.score_column, args.scores, scale=scale,
                              verb="calibrate", allow_missing=keep_missing)
+        # percentages are written back as the percentages read (they were written as the
+        # probabilities, 85.2784 as 0.8527840000000001, until 5 December 2026)
+        written_scores = (numeric_column(frame, args.score_column, args.scores,
+                                         flag="--score-column", allow_missing=True,
+                                         percent_sign=True) if scale == "percent" else scores)
         repeated = frame.attrs.get("repeated_columns", {})
         if args.output_column in repeated:
             raise DataError(
@@ -495,7 +525,8 @@ def _apply(args: argparse.Namespace) -> int:
             # a Parquet file cannot hold two columns of one name (pandas refuses to write it)
             name, where = next(iter(repeated.items()))
             raise DataError(
-                f"{args.scores}: the header names the column {shown(name)} more than once "
+                f"{args.scores}: {frame.attrs.get('names_from', 'the header')} names the "
+                f"column {shown(name)} more than once "
                 f"({positions_text(where)}, counting from 1), and a Parquet file cannot hold "
                 "two columns of one name; rename one of them (such as "
                 f"{shown(name + '_2')}), or write --out as .csv or .tsv, which keep both")
@@ -543,7 +574,7 @@ def _apply(args: argparse.Namespace) -> int:
             # a CSV column read as text: written as the numbers it holds (with the decimal
             # mark of the file it came from; a missing score as an empty field);
             # a Parquet column of numbers keeps its type (float32 stays float32)
-            frame[args.score_column] = scores
+            frame[args.score_column] = written_scores
         frame[args.output_column] = out
         stages.start("writing")
         write_table(frame, "-" if to_stdout(args.out) else args.out, dialect=dialect)
@@ -551,7 +582,8 @@ def _apply(args: argparse.Namespace) -> int:
     print(
         f"wrote {frame.shape[0]} rows with column {shown(args.output_column)} "
         f"({description['method']} map, {scale} scores) to "
-        f"{'standard output' if to_stdout(args.out) else str(args.out) + replaced_note(args.out)}",
+        f"{'standard output' if to_stdout(args.out) else str(args.out) + replaced_note(args.out)}"
+        f"{_separator_note(args.out, dialect)}",
         file=sys.stderr if to_stdout(args.out) else sys.stdout,
     )
     return 0
@@ -634,9 +666,10 @@ def register(subparsers: Any) -> None:
         "the first rows; refuse stops at the first one",
     )
     apply.add_argument("--out", default=None, metavar="FILE",
-                       help="output file: .csv, .tsv (tab-separated), .parquet or .pq; '-' "
-                       "or left out: CSV on "
-                       "standard output (the summary line then goes to stderr)")
+                       help="output file: .csv (comma-separated; semicolons for decimal "
+                       "commas or a semicolon file read), .tsv (tab-separated), .parquet or "
+                       ".pq; '-' or left out: CSV on standard output, separated as the file "
+                       "read (the summary line then goes to stderr)")
 
     def run_apply(args: argparse.Namespace) -> int:
         if not args.output_column.strip():

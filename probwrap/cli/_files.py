@@ -21,7 +21,7 @@ from ._common import (
 )
 
 __all__ = ["check_out_suffix", "check_writable", "write_atomic", "write_text", "write_table",
-           "to_stdout"]
+           "to_stdout", "output_separator"]
 
 
 def to_stdout(out: Any) -> bool:
@@ -219,6 +219,31 @@ def write_text(path: str | Path, text: str) -> None:
     write_atomic(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
 
+def output_separator(path: str | Path, sep: str, decimal: str = ".") -> str:
+    """The separator of a CSV output file: the one its extension names.
+
+    ``.tsv``: a tab, whatever the file read used (a decimal comma stays one: tab files with
+    decimal commas are read as such). ``.csv``: a comma, or a semicolon where the numbers have
+    decimal commas or the file read was separated by semicolons, as spreadsheets in
+    decimal-comma locales write their "CSV" (a tab- or ``|``-separated input written to a
+    ``.csv`` name kept its tabs or bars until 5 December 2026, and a spreadsheet opening it
+    showed one column). ``sep``: the separator of the file read; ``decimal``: its decimal mark.
+
+    Examples
+    --------
+    >>> output_separator("out.csv", "\\t"), output_separator("out.csv", "\\t", ",")
+    (',', ';')
+    >>> output_separator("out.tsv", ";"), output_separator("out.csv", ";")
+    ('\\t', ';')
+    """
+    suffix = Path(path).suffix.lower()
+    if suffix == ".tsv":
+        return "\t"
+    if suffix == ".csv":
+        return ";" if decimal == "," or sep == ";" else ","
+    return sep
+
+
 def write_table(frame: Any, path: str | Path, *, dialect: dict[str, Any] | None = None) -> None:
     """Write a DataFrame atomically, as Parquet (``.parquet``/``.pq``) or CSV (``.csv``, or
     ``.tsv``: separated by tabs).
@@ -252,10 +277,7 @@ def write_table(frame: Any, path: str | Path, *, dialect: dict[str, Any] | None 
         write_atomic(path, lambda tmp: frame.to_parquet(tmp, index=False))
     else:
         sep, newline = dialect.get("sep", ","), dialect.get("newline", "\n")
-        if path.suffix.lower() == ".tsv":
-            # tab-separated whatever the file read used (a decimal comma stays one: tab
-            # files with decimal commas are read as such)
-            sep = "\t"
+        sep = output_separator(path, sep, dialect.get("decimal", "."))
         options = {"sep": sep, "decimal": dialect.get("decimal", "."), "lineterminator": newline}
         encoding = "utf-8-sig" if dialect.get("bom") else "utf-8"
 

@@ -79,7 +79,7 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     if suffix in _NOT_TABLES:
         raise DataError(
             f"{path}: {_NOT_TABLES[suffix]} files are not read; save the table as CSV (UTF-8) "
-            "or Parquet (.csv, .parquet)"
+            f"or Parquet (.csv, .parquet){_sheets_text(path)}"
         )
     if table_kind(path) == "CSV" and path.suffix.lower() not in _COMPRESSED:
         wrong = _not_text(path)
@@ -90,7 +90,7 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     header: list[str] | None = None
     try:
         if table_kind(path) == "Parquet":
-            frame = pd.read_parquet(path)
+            frame, header = _read_parquet(pd, path)
             if not _plain_index(frame.index, pd) and (
                     as_text or any(name is not None for name in frame.index.names)):
                 # a column a script made the index (df.set_index("score").to_parquet(...))
@@ -123,6 +123,12 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                 text_options["skiprows"] = 1
             frame = _read_csv(pd, path, dtype=dtype, sep=sep, decimal=decimal,
                               encoding=encoding, **text_options)
+            all_rows, keep = frame.shape[0], _rows_before_empty_tail(pd, frame)
+            if keep < all_rows:
+                # read again without them, so that every column gets the type it has in
+                # the file without the empty rows (0/1 labels stay whole numbers)
+                frame = _read_csv(pd, path, dtype=dtype, sep=sep, decimal=decimal,
+                                  encoding=encoding, nrows=keep, **text_options)
             if as_text:  # kept as written; numeric_column reads the decimal commas
                 frame.attrs["decimal"] = decimal
                 # how the file was written, so that a table written back (calibrate apply)
@@ -162,6 +168,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
             # rows named in messages as a spreadsheet numbers them (blank lines that were
             # skipped counted; a one-column file's blank lines are rows already)
             set_row_numbers(path, _spreadsheet_rows(path, encoding, sep, frame.shape[0]))
+            if keep < all_rows:
+                _warn_empty_tail(path, np.arange(keep, all_rows))
             if header is not None:
                 _check_unnamed_tail(frame, header, path, sep)
     except DataError:
@@ -180,7 +188,7 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
     # empty names (a trailing separator) become "Unnamed: k" and can be told apart
     repeated = sorted({c for c in names if c.strip() and names.count(c) > 1})
     if repeated:
-        if header is not None and numbers_only_header(names):
+        if header is not None and table_kind(path) == "CSV" and numbers_only_header(names):
             # a file without a header line: its first row of numbers was read as the names
             raise DataError(f"{path}: {_NO_HEADER}")
         if len(names) != frame.shape[1]:
@@ -189,6 +197,8 @@ def read_table(path: str | Path, *, exact: Iterable[str] = (), as_text: bool = F
                 f"{', '.join(shown(c) for c in repeated)} more than once; rename them so that "
                 "each column has its own name")
         frame = _set_repeated_aside(frame, names, repeated)
+        if table_kind(path) == "Parquet":  # messages: "the Parquet file names ..."
+            frame.attrs["names_from"] = "the Parquet file"
     if frame.shape[0] == 0:
         raise DataError(f"{path}: the file has a header but no rows")
     return frame
@@ -247,7 +257,8 @@ def refuse_repeated(frame: Any, column: Any, path: str | Path, flag: str) -> Non
     where = frame.attrs.get("repeated_columns", {}).get(str(column))
     if where:
         raise DataError(
-            f"{path}: the header names the column(s) {shown(str(column))} more than once "
+            f"{path}: {frame.attrs.get('names_from', 'the header')} names the column(s) "
+            f"{shown(str(column))} more than once "
             f"({positions_text(where)}, counting from 1) and {flag} names it: which one is "
             "meant cannot be told; rename them so that each column has its own name")
 
@@ -323,6 +334,31 @@ _MISSING_WORDS = frozenset({
 })
 
 
+def _read_parquet(pd: Any, path: Path) -> tuple[Any, list[str] | None]:
+    """A Parquet file as a DataFrame, and its column names as stored when one is repeated
+    (None otherwise).
+
+    pyarrow writes a table that names a column twice (``pa.table(..., names=[..., "notes",
+    ..., "notes"])``), but pandas' reader refuses it whole ("Multiple matches for
+    FieldRef.Name(notes)"), even when no option names that column. Such a file is read
+    column by column here; the caller sets the repeated columns aside as for a CSV header
+    (:func:`_set_repeated_aside`).
+    """
+    import pyarrow.parquet as pq
+
+    names = [str(name) for name in pq.read_schema(path).names]
+    if len(set(names)) == len(names):
+        return pd.read_parquet(path), None
+    table = pq.ParquetFile(path).read()
+    # the pandas metadata (written by pandas, which never writes a name twice) may name
+    # index columns by a repeated name: the columns are read as they are stored
+    table = table.replace_schema_metadata(None)
+    positional = [f"{name} [column {k + 1}]" for k, name in enumerate(table.column_names)]
+    frame = table.rename_columns(positional).to_pandas()
+    frame.columns = names  # set back: the caller renames the repeated ones again
+    return frame, names
+
+
 def _plain_index(index: Any, pd: Any) -> bool:
     """True for the unnamed 0, 1, 2, ... index that holds no data of the file."""
     return (isinstance(index, pd.RangeIndex) and index.name is None and index.start == 0
@@ -381,6 +417,42 @@ def _spreadsheet_rows(path: Path, encoding: str, sep: str, n_rows: int) -> np.nd
     if np.array_equal(numbers, np.arange(2, n_rows + 2)):
         return None
     return numbers
+
+
+def _rows_before_empty_tail(pd: Any, frame: Any) -> int:
+    """The number of rows of ``frame`` before the rows at its end whose every field is empty
+    (``,,,``); all of them when there are none, or when every row is so.
+
+    A spreadsheet saved as CSV writes such a line for every row below the table that was once
+    formatted or cleared; pandas skips blank lines but reads these as rows of missing values,
+    so every verb refused the file ("row 291: the value is missing") and ``calibrate apply``
+    wrote the empty rows out (before 5 December 2026; see
+    ``benchmarks/cli_awkward_files_second.py``). A row of empty fields between rows of data is
+    not touched: it is refused or let through as a missing value, as before.
+    """
+    if frame.shape[1] < 2:
+        return frame.shape[0]
+
+    def empty(i: int) -> bool:
+        return all(not v.strip() if isinstance(v, str) else bool(pd.isna(v))
+                   for v in frame.iloc[i].tolist())
+
+    keep = frame.shape[0]
+    while keep > 0 and empty(keep - 1):
+        keep -= 1
+    return frame.shape[0] if keep == 0 else keep
+
+
+def _warn_empty_tail(path: Path, dropped: np.ndarray) -> None:
+    """The warning that the rows ``dropped`` (0-based) at the end held only empty fields."""
+    from ._common import running_verb
+
+    many = dropped.shape[0] > 1
+    warn_line(running_verb(), (
+        f"{path}: the last {dropped.shape[0]} row{'s' if many else ''}, "
+        f"{rows_text(path, dropped)}, hold{'' if many else 's'} only empty fields, as a "
+        "spreadsheet writes for rows below its table; left out (delete "
+        f"{'them' if many else 'it'} to silence this warning)"))
 
 
 def _blank_lines_as_missing(pd: Any, frame: Any, path: Path, encoding: str, sep: str) -> Any:
@@ -525,6 +597,26 @@ _NOT_TABLES = {
     ".json": "JSON", ".feather": "Feather", ".arrow": "Arrow", ".pkl": "pickle",
     ".pickle": "pickle", ".h5": "HDF5", ".hdf5": "HDF5",
 }
+
+
+def _sheets_text(path: Path) -> str:
+    """"" or, for an Excel workbook of several sheets, the names of its sheets and that a
+    spreadsheet saves only the sheet shown as CSV (a best-effort look: "" when the file is not
+    such a workbook)."""
+    if path.suffix.lower() not in (".xlsx", ".xlsm"):
+        return ""
+    try:
+        with zipfile.ZipFile(path) as archive:
+            book = archive.read("xl/workbook.xml").decode("utf-8", "replace")
+    except (OSError, KeyError, zipfile.BadZipFile, RuntimeError, ValueError):
+        return ""
+    names = [clean(name) for name in re.findall(r'<(?:\w+:)?sheet\b[^>]*?\bname="([^"]*)"',
+                                                 book)]
+    if len(names) < 2:
+        return ""
+    listed = ", ".join(shown(name) for name in names[:10]) + (", ..." if len(names) > 10 else "")
+    return (f"; the workbook has {len(names)} sheets ({listed}) and a spreadsheet saves only "
+            "the sheet shown as CSV: show the one holding the scores, then save it")
 
 
 #: errors of a best-effort look at a file (a damaged archive, bytes that are not text): the
@@ -798,15 +890,17 @@ def _csv_header(path: Path, encoding: str, sep: str) -> list[str] | None:
 
 
 #: a field that is a number written with a decimal comma: 0,42 or -1,25 or Excel's 4,757E-02
-#: (optionally in double quotes), between semicolons (tabs) or at the start or end of a line
+#: or a percentage 12,5 % (optionally in double quotes), between semicolons (tabs) or at the start or end of a line
 _DECIMAL_COMMA = {
     ";": re.compile(
-        r'(?:^|;)[ \t]*"?[ \t]*[-+\u2212]?\d+,\d+(?:[eE][-+]?\d+)?[ \t]*"?[ \t]*(?=;|\r?$)',
+        r'(?:^|;)[ \t]*"?[ \t]*[-+\u2212]?\d+,\d+(?:[eE][-+]?\d+)?(?:[ \u00a0]?%)?[ \t]*"?[ \t]*'
+        r'(?=;|\r?$)',
         re.MULTILINE),
     # a tab-separated file: spreadsheets' "text (tab-delimited)" export writes the locale's
     # decimal comma as the ';' export does (it was refused as "not a finite number")
     "\t": re.compile(
-        r'(?:^|\t)[ ]*"?[ ]*[-+\u2212]?\d+,\d+(?:[eE][-+]?\d+)?[ ]*"?[ ]*(?=\t|\r?$)',
+        r'(?:^|\t)[ ]*"?[ ]*[-+\u2212]?\d+,\d+(?:[eE][-+]?\d+)?(?:[ \u00a0]?%)?[ ]*"?[ ]*'
+        r'(?=\t|\r?$)',
         re.MULTILINE),
 }
 #: characters read at a time when looking for decimal commas
@@ -1013,7 +1107,7 @@ def _row(path: str | Path, column: str, row: int) -> str:
 
 def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
                    infinite_hint: str = "", allow_missing: bool = False,
-                   dots: str | None = None) -> np.ndarray:
+                   dots: str | None = None, percent_sign: bool = False) -> np.ndarray:
     """One column as finite floats, or a DataError naming the file, column and first bad row.
 
     ``infinite_hint`` is added to the message when the first bad value is an infinite number.
@@ -1022,6 +1116,10 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
     ``dots`` (weights): how a dot is read in a semicolon-separated CSV file without decimal
     commas, where ``2.500`` may be 2500 (:func:`_settle_dots`): ``"ask"`` (settled by the
     column's other fields or refused), ``"decimal"``, ``"thousands"``; None: not looked at.
+
+    ``percent_sign`` (scores read with ``--scale percent``): a ``%`` after a number
+    (``12.5%``, as a spreadsheet shows a cell formatted as a percentage) is dropped, so the
+    number before it is read; otherwise a percent sign is refused, naming the option.
 
     Text is converted with NumPy's correctly rounded parser (every float written with enough
     digits reads back exactly).
@@ -1044,6 +1142,11 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
         values = series.to_numpy(dtype=float, na_value=np.nan)
     else:
         raw = series.to_numpy(dtype=object)
+        if percent_sign:
+            # a file with decimal commas read for its numbers has them made points already,
+            # but not in '85,27 %', which was no number then
+            raw = _without_percent_sign(raw, commas="decimal" not in frame.attrs and (
+                frame.attrs.get("csv_read", ("", "."))[1] == ","))
         # decimal commas of a table kept as written (read_table as_text) made points, and
         # thousands separators dropped where the form leaves no doubt (1.391,03 with decimal
         # commas, 3,703.50 with decimal points); an ambiguous 2.500 is refused
@@ -1051,8 +1154,9 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
         dotted = (0, 0)
         deferred = frame.attrs.get("dots_deferred", {})
         if column in deferred:  # 2.500 with decimal commas: settled by dots, or refused
-            raw, count, first = _plain_number_text(deferred[column], ",", path, column,
-                                                   dots=dots, flag=flag)
+            raw, count, first = _plain_number_text(
+                _without_percent_sign(deferred[column]) if percent_sign else deferred[column],
+                ",", path, column, dots=dots, flag=flag)
         else:
             if dots is not None and frame.attrs.get("csv_read") in ((";", "."), ("\t", ".")):
                 raw, *dotted = _settle_dots(raw, path, column, flag, dots)
@@ -1096,6 +1200,23 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
     if grouped:
         _warn_grouped(path, column, flag, *grouped, values[grouped[1]])
     return values
+
+
+def _without_percent_sign(raw: np.ndarray, commas: bool = False) -> np.ndarray:
+    """Text fields with a ``%`` after a number (``12.5%``, ``12,5 %``) without the sign; other
+    fields as they are (a new array). ``commas``: a decimal comma of such a field becomes a
+    point."""
+    out = raw.copy()
+    for i, v in enumerate(raw):
+        if isinstance(v, str) and _PERCENT_NUMBER.fullmatch(v.strip()):
+            out[i] = v.strip()[:-1].rstrip()
+            if commas and _is_number(out[i].replace(",", ".")):
+                out[i] = out[i].replace(",", ".")
+    return out
+
+
+#: a number followed by a percent sign, as a spreadsheet shows a percentage cell
+_PERCENT_NUMBER = re.compile(r"[-+\u2212]?[\d.,\s\u00a0]*\d\s*%")
 
 
 #: thousands separated by dots and a decimal comma (1.391,03): read only where the file's
@@ -1377,16 +1498,19 @@ def _number_hint(value: Any, flag: str = "--score-column") -> str:
     """Why a field that looks like a number was not read as one, or "" (``flag``: the option
     naming the column; the percent advice speaks of scores only for a score column)."""
     text = str(value).strip().strip('"').strip()
-    if text.endswith("%") and _number(text[:-1].strip()) is not None:
+    bare = text[:-1].strip()
+    percent = _number(bare)
+    if percent is None and re.fullmatch(r"[-+]?\d+,(?:\d{1,2}|\d{4,})", bare):
+        percent = _number(bare.replace(",", "."))  # 85,27 % (a decimal comma, not thousands)
+    if text.endswith("%") and percent is not None:
         if "score" not in flag and "class-columns" not in flag:
             # a weight of "12%" was told to "write scores as probabilities"
             return (f"; a percent sign is not read: write the number without it ({clean(text)} "
-                    f"as {_number(text[:-1].strip()) / 100:.15g}, or as "
-                    f"{clean(text[:-1].strip())} if the column counts in percent)")
-        return (f"; a percent sign is not read: write scores as probabilities in [0, 1] "
-                f"({clean(text)} as {_number(text[:-1].strip()) / 100:.15g}), or as the number "
-                f"alone ({clean(text[:-1].strip())}) with --scale percent, and other numbers "
-                "without it")
+                    f"as {percent / 100:.15g}, or as {clean(bare)} if the column counts in "
+                    "percent)")
+        return (f"; a percent sign is read only with --scale percent (which reads "
+                f"{clean(text)} as {percent / 100:.15g}); give it, or write scores as "
+                "probabilities in [0, 1]")
     if _COMMA_NUMBER.fullmatch(text):
         return ("; numbers are read without thousands separators and with a decimal point (a "
                 "decimal comma is read only in a semicolon-separated file, where ';' separates "
