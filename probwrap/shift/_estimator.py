@@ -1524,8 +1524,12 @@ class PriorEstimator(_Resampling):
                 f"firmly: the shift test rejects no shift (p = {pvalue:.2g}), {against}, and "
                 f"each of the {n_eff:.4g} effective unlabelled rows carries about {worth:.2g} "
                 "of a labelled row's information about it. Read the edge as a finding (these "
-                f"rows may hold no member, or nearly none, of {cls}); the reported share "
-                f"{prior[j]:.3g} is {pulled} and {where}.",
+                f"rows may hold no member, or nearly none, of {cls}) only if the class shares "
+                "are all that changed: where the new rows come from another period, site or "
+                "group, a feature that moved for another reason along the class direction gives "
+                "the same picture (PriorShiftWrapper(feature_check_rows=...) tests the features; "
+                "docs/prior_shift.md, 'Natural shifts move the features too'). The reported "
+                f"share {prior[j]:.3g} is {pulled} and {where}.",
                 BoundaryPriorWarning,
                 stacklevel=3,
             )
