@@ -17,7 +17,7 @@ draws:
   (Fisher 1935; exchangeability under "no shift");
 * ``edgeworth``: the one-term Edgeworth expansion of the t statistic,
   ``P(T <= x) = Phi(x) - (g / 6)(x^2 - 1) phi(x)`` (Hall 1992, *The Bootstrap and Edgeworth
-  Expansion*, section 2.4, for a standardised statistic), with ``g`` the skewness of the
+  Expansion*, chapter 2, for a standardised statistic; cited from memory), with ``g`` the skewness of the
   difference of two means, ``mu3 (1/n_t^2 - 1/n_s^2) / (s^2 (1/n_t + 1/n_s))^1.5`` from the
   pooled central moments (with a pooled variance the studentising term cancels when both
   samples share a distribution: derived here, not from a source); equal tails;
