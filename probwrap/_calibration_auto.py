@@ -284,6 +284,21 @@ _PASS_OVER_TEMPERATURE_OFF_SHARES_MULTICLASS = True
 #: rule off. Measured in docs/calibration.md (the bullet on decreasing maps).
 _PASS_OVER_DECREASING_PLATT = True
 
+#: Two classes, a frozen model, fewer than this many held-out rows (of weight > 0): where the
+#: one-standard-error rule keeps temperature or beta scaling, Platt scaling (the map of
+#: scikit-learn's ``CalibratedClassifierCV(method="sigmoid")``, with Platt's smoothed targets)
+#: is kept instead unless the kept map's cross-validated log loss is lower than Platt's by more
+#: than the standard error of their difference with the folds as the units (the per-fold mean
+#: differences: the one-standard-error rule, Breiman et al. 1984, read over folds, as in the
+#: k-fold paired comparison of two learners, Dietterich 1998; from memory). On a few dozen rows
+#: the per-row standard error understates how much the winner of a fold race owes to the draw:
+#: the rows of a fold share one fitted map, and a temperature (no intercept) or a beta map
+#: (three parameters) that won there by less than the spread of its fold margins ended far
+#: above the sigmoid more often than Platt's map did. Measured with
+#: benchmarks/auto_small_separated.py (docs/evidence/small_data_log.md, the section on auto on
+#: very few rows and on separated multiclass draws); ``0`` switches the rule off.
+_PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS = 100
+
 
 def _boundary_of(cal: Any) -> str | None:
     """Why a fitted map (or any map of a one-vs-rest list) sits at a boundary, or None."""
@@ -828,6 +843,12 @@ class _AutoChoice:
                             and scores_out["platt"][0] - means[best] <= scores_out["platt"][1]))
                         and self._temperature_off_shares(scores, y, w, notes, best, means)):
                     continue  # to the next map in order: Platt scaling when within an error
+                if (binary and ho.n_folds == 0 and name in ("temperature", "beta")
+                        and n_rows < _PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS
+                        and "platt" in eligible and not decreasing_passed
+                        and self._platt_within_fold_spread(name, losses, w, fold_masks, means,
+                                                           notes, scores, y)):
+                    return "platt", scores_out, notes
                 return name, scores_out, notes
         if decreasing_passed:
             # no later map was kept after all: Platt's map, within a standard error, stays
@@ -896,6 +917,40 @@ class _AutoChoice:
             )
         notes["temperature"] = text if "temperature" not in notes else (
             notes["temperature"] + "; " + text)
+        return True
+
+    def _platt_within_fold_spread(self, name, losses, w, fold_masks, means, notes,
+                                  scores, y) -> bool:
+        """True (and noted) when the map ``name`` the one-standard-error rule kept does not beat
+        Platt scaling on the folds by more than the standard error of the per-fold mean
+        differences: see ``_PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS``."""
+        if len(fold_masks) < 2:
+            return False
+        d = losses[name] - losses["platt"]
+        per_fold = np.array([float(w[m] @ d[m] / w[m].sum()) for _, m in fold_masks
+                             if w[m].sum() > 0])
+        if per_fold.shape[0] < 2:
+            return False
+        se = float(per_fold.std(ddof=1) / np.sqrt(per_fold.shape[0]))
+        margin = means["platt"] - means[name]
+        if margin > se:
+            return False
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                platt = self._fit_map(PlattMap(), scores, y, w)
+            except (ValueError, FloatingPointError, np.linalg.LinAlgError):
+                return False
+        if not float(getattr(platt, "slope_", 0.0)) >= 0.0:
+            return False  # never trade a map for a decreasing one
+        text = (
+            f"kept by the one-standard-error rule but replaced by 'platt': on {len(per_fold)} "
+            f"folds of fewer than {_PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS} held-out rows of a "
+            f"frozen model its cross-validated log loss {means[name]:.4g} is not lower than "
+            f"Platt scaling's {means['platt']:.4g} by more than the standard error of their "
+            f"per-fold differences ({se:.3g})"
+        )
+        notes[name] = text if name not in notes else notes[name] + "; " + text
         return True
 
     def _platt_decreasing_by_little(self, eligible, losses, means, paired_se, scores, y, w,

@@ -67,6 +67,9 @@ def test_frozen_model_without_ranking_gets_the_class_shares(monkeypatch):
     # and so would passing over a frozen model's temperature that scores above the class shares
     # (5 December 2026: temperature 0.708 on the folds against the class shares' 0.592 here)
     monkeypatch.setattr(auto_module, "_PASS_OVER_FROZEN_TEMPERATURE_ABOVE_SHARES", False)
+    # and so would keeping Platt scaling on a small frozen set unless the temperature beats it
+    # by more than its fold spread (the kept temperature gives way to Platt's 0.534 here)
+    monkeypatch.setattr(auto_module, "_PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS", 0)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         before = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc, yc)

@@ -745,6 +745,9 @@ def test_auto_tries_platt_before_temperature_when_a_class_is_rare(monkeypatch):
             monkeypatch.setattr(A, "_PLATT_FIRST_MAX_MINORITY_SHARE", 0.0)
             # the base-rate rule (twenty-third session) would also catch this draw
             monkeypatch.setattr(A, "_BASE_RATE_SE", float("inf"))
+            # and so would keeping Platt scaling on a small frozen set unless the temperature
+            # beats it by more than its fold spread
+            monkeypatch.setattr(A, "_PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS", 0)
             b = CalibrationWrapper(frozen, random_state=0).fit(X[cal], y[cal])
             monkeypatch.undo()
             s = CalibratedClassifierCV(frozen, method="sigmoid").fit(X[cal], y[cal])

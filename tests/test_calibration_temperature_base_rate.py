@@ -79,6 +79,9 @@ def test_greene_frozen_logistic_temperature_off_base_rate_gives_platt(monkeypatc
     # before: temperature (T = 1.12) kept as the simpler map, test log loss 0.676, 1.11x the
     # sigmoid's
     monkeypatch.setattr(auto_module, "_BASE_RATE_SE", float("inf"))
+    # and so would keeping Platt scaling on a small frozen set unless the temperature
+    # beats it by more than its fold spread
+    monkeypatch.setattr(auto_module, "_PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS", 0)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         old = CalibrationWrapper(model, method="auto", random_state=1).fit(Xc, yc)
