@@ -56,7 +56,8 @@ Run from the repository root with ``PYTHONPATH=$PWD``: ``nice python benchmarks/
 --quick`` (four sets, four models, 25 and 50 rows, seed 0, weights; a few minutes), ``nice
 python benchmarks/hunt32_sweep.py --weights --csv F`` (everything, three seeds, weights on seed
 0), ``--sets``, ``--models``, ``--modes``, ``--sizes``, ``--seeds``, ``--first-seed``,
-``--from-csv A,B``, ``--list``. Results: docs/evidence/small_data_log.md, "The session-32
+``--from-csv A,B``, ``--list``, ``--two-valued A,B`` (saved cells: the frozen two-valued cells
+where ``auto`` kept a temperature, refitted with Platt scaling). Results: docs/evidence/small_data_log.md, "The session-32
 calibration hunt".
 """
 
