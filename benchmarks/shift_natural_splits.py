@@ -210,9 +210,10 @@ def _labelled(pool, y, classes, n, rng):
     return np.concatenate([first, rest[:max(0, n - first.size)]])
 
 
-def _feature_check(X, y, lab, Xu, psw) -> float:
-    """``feature_mixture_misfit``'s combined p-value: the labelled rows re-weighted to the
-    wrapper's estimate against the batch (NaN where it cannot run)."""
+def _feature_check(X, y, lab, Xu, psw) -> tuple[float, float]:
+    """``feature_mixture_misfit``'s combined p-value and its power figure (``power``): the
+    labelled rows re-weighted to the wrapper's estimate against the batch (NaN where it cannot
+    run)."""
     from probwrap.shift import feature_mixture_misfit
 
     try:
@@ -220,9 +221,9 @@ def _feature_check(X, y, lab, Xu, psw) -> float:
             warnings.simplefilter("ignore")
             r = feature_mixture_misfit(X.iloc[lab].to_numpy(float), y[lab], Xu.to_numpy(float),
                                        prior=psw, level=None, random_state=0)
-        return float(r.combined_pvalue)
+        return float(r.combined_pvalue), float(getattr(r, "power", np.nan))
     except ValueError:
-        return np.nan
+        return np.nan, np.nan
 
 
 def one(name, X, y, g, pair, mname, seed, rows, crashes, n_labelled=N_LABELLED, feature_check=True,
@@ -301,7 +302,9 @@ def one(name, X, y, g, pair, mname, seed, rows, crashes, n_labelled=N_LABELLED, 
                 ll0, lla, llo = (log_loss(yu, P, classes) for P in (P0, Pa, q))
                 cover = (bool(np.all((lo - 1e-9 <= truth) & (truth <= hi + 1e-9)))
                          if iv is not None else None)
-                fc = _feature_check(X, y, lab, Xu, psw) if feature_check else np.nan
+                fc, fc_power = (_feature_check(X, y, lab, Xu, psw) if feature_check
+                                else (np.nan, np.nan))
+                inside = getattr(psw, "feature_check_", None)  # adapt's own (feature_check_rows)
                 rows.append(dict(
                     set=name, pair=pname, model=mname, variant=vname, n_lab=len(lab), seed=seed,
                     kind=kd, k=k, auc_target=auc_t, n_unl=len(yu), src=src[j], truth=truth[j],
@@ -313,7 +316,10 @@ def one(name, X, y, g, pair, mname, seed, rows, crashes, n_labelled=N_LABELLED, 
                     oracle_none=llo / ll0, pvalue=float(psw.shift_pvalue_),
                     weight=float(psw.adaptation_weight_),
                     fold_dis=float(getattr(psw, "fold_disagreement_", np.nan) or np.nan),
-                    feature_p=fc,
+                    feature_p=fc, feature_power=fc_power,
+                    adapt_feature_p=np.nan if inside is None else float(inside.combined_pvalue),
+                    adapt_feature_power=(np.nan if inside is None
+                                         else float(getattr(inside, "power", np.nan))),
                     n_exact01=int(np.sum(~np.isfinite(Pa) | (Pa <= 0.0) | (Pa >= 1.0))),
                     row_sum_err=float(np.abs(Pa.sum(axis=1) - 1).max()),
                     warn_fit=warn_fit, warn=wa_s))
@@ -381,6 +387,50 @@ def classify(df: pd.DataFrame, crashes=()) -> None:
                 index=False, float_format=lambda v: f"{v:.3g}"))
     print("\nwarnings from adapt (cells):")
     print(d.warn.str.split(",").explode().value_counts().to_string())
+    warning_table(d)
+    power_check(d)
+
+
+def warning_table(d: pd.DataFrame) -> None:
+    """``covshift`` batches (no re-weighting is right) by the warning class ``adapt`` raised:
+    cells, cells above 1.02 x no adjustment, and the geometric mean adapted / none."""
+    c = d[d.kind == "covshift"].copy()
+    if not len(c):
+        return
+    c["harm"] = c.r_none > 1.02
+    print(f"\n== covshift batches by warning class ({len(c)} cells, {int(c.harm.sum())} above "
+          f"1.02 x none, {int((c.harm & c.quiet).sum())} of them quiet)")
+    print(f"  {'warning':32s} {'cells':>5s} {'>1.02':>5s} {'gm a/none':>9s} {'alone':>5s}")
+    exploded = c.assign(w=c.warn.str.split(",")).explode("w")
+    exploded["w"] = exploded.w.replace("", "(none)")
+    for w, g in sorted(exploded.groupby("w"), key=lambda t: -len(t[1])):
+        alone = int((g.warn == w).sum()) if w != "(none)" else len(g)
+        print(f"  {w:32s} {len(g):5d} {int(g.harm.sum()):5d} {L.geo_mean(g.r_none):9.3f} {alone:5d}")
+    print("  harm cells whose only probwrap warnings are about too few rows or the feature "
+          "check's power:", int((c.harm & c.warn.str.split(",").map(
+              lambda ws: bool(ws) and ws != [""] and set(ws) <= {
+                  "FewLabelledRowsWarning", "FeatureCheckPowerWarning",
+                  "ImprecisePriorWarning"})).sum()))
+
+
+def power_check(d: pd.DataFrame) -> None:
+    """Where ``adapt`` ran the feature check (``feature_check_rows``): cells whose power figure
+    is below 0.5, and whether ``FeatureCheckPowerWarning`` came exactly there (where the check
+    found nothing)."""
+    if "adapt_feature_power" not in d or d.adapt_feature_power.isna().all():
+        return
+    ran = d[d.adapt_feature_power.notna()]
+    low = ran.adapt_feature_power < 0.5
+    found = ran.adapt_feature_p < 0.01
+    warned = ran.warn.str.contains("FeatureCheckPowerWarning")
+    print(f"\n== feature check in adapt: {len(ran)} cells; power < 0.5 in {int(low.sum())} "
+          f"({int((low & found).sum())} of them still found a misfit); "
+          f"FeatureCheckPowerWarning in {int(warned.sum())}; "
+          f"warned == (power < 0.5 and nothing found) in {int((warned == (low & ~found)).sum())}")
+    for s_, g in ran[low].groupby("set"):
+        print(f"  {s_[:34]:34s} low-power cells {len(g):3d} n_lab {sorted(g.n_lab.unique())} "
+              f"p>=0.5 {int((g.adapt_feature_p >= 0.5).sum())} power {g.adapt_feature_power.min():.2f}"
+              f"-{g.adapt_feature_power.max():.2f}")
 
 
 def main() -> None:

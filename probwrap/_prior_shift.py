@@ -374,7 +374,10 @@ class PriorShiftWrapper(HeldOutClassifierBase):
         ``m`` of the new rows with them re-weighted to the maximum-likelihood class shares
         (:func:`probwrap.shift.feature_mixture_misfit`; result in ``feature_check_``),
         warning with :class:`~probwrap.shift.FeatureMixtureMisfitWarning` below 1 % and naming
-        the columns that differ most. ``fit`` refuses it for features that are not numeric and
+        the columns that differ most, or, where it found nothing on too few effective rows to
+        see a moderate difference (shares leaning on a class of few labelled rows), with
+        :class:`~probwrap.shift.FeatureCheckPowerWarning` (``feature_check_.power`` below
+        0.5; ``benchmarks/shift_natural_splits.py``). ``fit`` refuses it for features that are not numeric and
         finite (a sparse matrix, text or category columns, missing values) and for Dask or
         Spark rows; ``adapt`` refuses Dask or Spark rows while it is set, and does not run
         the check with ``cells`` (it counts rows as independent), saying so. ``monitor`` runs
@@ -508,8 +511,9 @@ class PriorShiftWrapper(HeldOutClassifierBase):
     feature_check_ : probwrap.shift.FeatureMixtureMisfit or None
         With ``feature_check_rows`` set: the last ``adapt``'s feature check (overall p-value,
         and per column the distance to the re-weighted labelled rows, Holm-corrected
-        p-values, effect sizes and ``flagged_columns``); None where it did not run (a warning
-        says why). Set by ``adapt`` only.
+        p-values, effect sizes and ``flagged_columns``; ``effective_rows``, ``power`` and
+        ``power_note``, which says why a large p-value is no evidence where the power is
+        below 0.5); None where it did not run (a warning says why). Set by ``adapt`` only.
 
     Examples
     --------

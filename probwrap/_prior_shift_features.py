@@ -5,7 +5,12 @@
 features (at most as many rows, drawn the same way) with that sample re-weighted to the
 wrapper's maximum-likelihood class shares, by :func:`probwrap.shift.feature_mixture_misfit`,
 stores the result as ``feature_check_`` and warns with
-:class:`~probwrap.shift.FeatureMixtureMisfitWarning`, naming the columns that differ most.
+:class:`~probwrap.shift.FeatureMixtureMisfitWarning`, naming the columns that differ most, or,
+where it found nothing on too few effective rows to see a moderate difference (``power`` below
+0.5; the labelled side re-weighted to shares that lean on a class of few rows), with
+:class:`~probwrap.shift.FeatureCheckPowerWarning`
+(``benchmarks/shift_natural_splits.py``; docs/evidence/prior_shift_log.md, "The feature
+check's power on few labelled rows").
 """
 
 from __future__ import annotations
@@ -20,8 +25,10 @@ from ._heldout import _is_dask
 from ._validation import plain
 from .shift._feature_mix import (
     FEATURE_MISFIT_LEVEL,
+    FeatureCheckPowerWarning,
     FeatureMixtureMisfitWarning,
     feature_mixture_misfit,
+    low_power_message,
     misfit_message,
 )
 
@@ -179,6 +186,9 @@ def run_feature_check(wrapper: Any, X: Any, sample_weight: Any, cells: Any) -> N
     if result.combined_pvalue < FEATURE_MISFIT_LEVEL:
         warnings.warn(misfit_message("PriorShiftWrapper.adapt", result),
                       FeatureMixtureMisfitWarning, stacklevel=3)
+    elif result.power_note:
+        warnings.warn(low_power_message("PriorShiftWrapper.adapt", result),
+                      FeatureCheckPowerWarning, stacklevel=3)
 
 
 def _batch_labels(n: int, batches: Any, batch_size: Any) -> np.ndarray:
@@ -242,7 +252,7 @@ def monitor_feature_checks(wrapper: Any, X: Any, table: np.ndarray, batches: Any
     cap = int(wrapper.feature_check_rows)
     seed = _seed(wrapper.random_state)
     pvalues, results = none[0].copy(), list(none[1])
-    flagged, skipped = [], []
+    flagged, skipped, weak = [], [], []
     for i, b in enumerate(table["batch"]):
         rows = np.flatnonzero(labels == b)
         Ab, wb = A[rows], None if w is None else w[rows]
@@ -263,6 +273,8 @@ def monitor_feature_checks(wrapper: Any, X: Any, table: np.ndarray, batches: Any
         results[i], pvalues[i] = res, res.combined_pvalue
         if res.combined_pvalue < FEATURE_MISFIT_LEVEL:
             flagged.append((b, res))
+        elif res.power_note:
+            weak.append((b, res))
     if skipped:
         which = ", ".join(str(plain(b)) for b, _ in skipped[:5]) + (
             ", ..." if len(skipped) > 5 else "")
@@ -280,6 +292,14 @@ def monitor_feature_checks(wrapper: Any, X: Any, table: np.ndarray, batches: Any
             "batch tested on its own: about one ordinary batch in a hundred is named by "
             f"chance); first, batch {plain(b0)}", res0), FeatureMixtureMisfitWarning,
             stacklevel=3)
+    if weak:
+        which = ", ".join(str(plain(b)) for b, _ in weak[:8]) + (
+            ", ..." if len(weak) > 8 else "")
+        b0, res0 = weak[0]
+        warnings.warn(low_power_message(
+            f"PriorShiftWrapper.monitor: in {len(weak)} of {n_b} batches (batch {which}) the "
+            f"feature check's power is low; first, batch {plain(b0)}", res0),
+            FeatureCheckPowerWarning, stacklevel=3)
     return with_feature_fields(table, pvalues, results)
 
 

@@ -34,6 +34,7 @@ from ._estimate import (
 )
 from ._estimator import CALIBRATIONS, INTERVALS, PRIOR_METHODS, PriorEstimator
 from ._feature_mix import (
+    FeatureCheckPowerWarning,
     FeatureMixtureMisfit,
     FeatureMixtureMisfitWarning,
     feature_mixture_misfit,
@@ -48,6 +49,7 @@ __all__ = [
     "BoundaryPriorWarning",
     "ClassMixtureMisfitWarning",
     "class_mixture_misfit",
+    "FeatureCheckPowerWarning",
     "FeatureMixtureMisfit",
     "FeatureMixtureMisfitWarning",
     "feature_mixture_misfit",

@@ -62,14 +62,38 @@ from typing import Any
 import numpy as np
 from scipy.stats import kstwo, norm
 
+from .._validation import plain
 from ._estimate import em_prior
 from ._mixture_fit import _kish
 
-__all__ = ["FeatureMixtureMisfit", "FeatureMixtureMisfitWarning", "feature_mixture_misfit",
-           "FEATURE_MISFIT_LEVEL"]
+__all__ = ["FeatureMixtureMisfit", "FeatureMixtureMisfitWarning", "FeatureCheckPowerWarning",
+           "feature_mixture_misfit", "FEATURE_MISFIT_LEVEL"]
 
 #: the default level at which :func:`feature_mixture_misfit` warns
 FEATURE_MISFIT_LEVEL = 0.01
+#: the reference effect of the power figure: one column of a normal feature slid by half a
+#: standard deviation (Cohen's "medium" d = 0.5), which an ideal discriminator ranks with
+#: AUC = Phi(d / sqrt(2)) (the binormal AUC of two equal-variance normals, from memory)
+POWER_SLIDE_SD = 0.5
+#: below this power against the reference effect the check is said to have essentially none
+#: (it misses such a slide more often than it sees it)
+LOW_POWER = 0.5
+
+
+class FeatureCheckPowerWarning(UserWarning):
+    """The feature check ran on too few effective rows to see a moderate difference.
+
+    :func:`feature_mixture_misfit` (or ``PriorShiftWrapper.adapt`` / ``monitor`` with
+    ``feature_check_rows``) found no misfit, but its rows could hardly have shown one: a rank
+    test on its effective rows (Kish's counts of the unlabelled rows and of the labelled rows
+    re-weighted to the estimated shares) would see one column slid by half a standard
+    deviation with probability below one half (``power`` of the result; Noether 1987). This
+    happens where the estimated shares lean on a class with few labelled rows (AER's ``HMDA``:
+    100 labelled rows, 9 of them denied, re-weighted to a share of 0.97 denied count as about
+    10 rows and gave ``combined_pvalue`` 1.0). The p-value is not evidence that the features
+    fit. Measured in ``benchmarks/shift_natural_splits.py`` (docs/evidence/prior_shift_log.md,
+    "The feature check's power on few labelled rows").
+    """
 
 
 class FeatureMixtureMisfitWarning(UserWarning):
@@ -144,6 +168,19 @@ class FeatureMixtureMisfit:
         before, when ``pvalue`` was): a batch that differs in one column is seen by that
         column's test on
         far fewer rows than the discriminator needs.
+    power : float
+        An upper figure for the check's power against a moderate difference: the chance that
+        a one-sided rank test on the check's effective rows (``effective_rows``), at half the
+        check's level (its share of the Bonferroni split), sees one normal column slid by half
+        a standard deviation, read by an ideal discriminator (held-out AUC 0.638):
+        ``Phi(0.138 / sqrt((1/n_u + 1/n_l) / 12) - z)``, the Mann-Whitney statistic's null
+        spread as in Noether's sample-size formula (Noether 1987, "Sample size determination
+        for some common nonparametric tests", JASA 82, 645-647, from memory). The check itself
+        cross-fits and splits its rows, so its power is lower still.
+    power_note : str
+        Empty where ``power`` is at least 0.5; else why the check could hardly see a
+        difference (the effective rows on each side, and the class whose few labelled rows
+        carry the re-weighted side): read ``combined_pvalue`` then as no evidence either way.
     """
 
     statistic: float
@@ -163,6 +200,8 @@ class FeatureMixtureMisfit:
     flagged_columns: tuple[str, ...] = ()
     column_level: float = FEATURE_MISFIT_LEVEL
     combined_pvalue: float = float("nan")
+    power: float = float("nan")
+    power_note: str = ""
 
     def column_order(self) -> np.ndarray:
         """The columns' indices from the most to the least significant (Holm-corrected
@@ -580,18 +619,61 @@ def feature_mixture_misfit(
     col_level = float(level) if level is not None else FEATURE_MISFIT_LEVEL
     order = np.lexsort((np.arange(dist.size), -dist, holm))
     flagged = tuple(names[j] for j in order if holm[j] < col_level)
+    n_u, n_l = _kish(w_u), _kish(w_l)
+    power = check_power(n_u, n_l, col_level)
     result = FeatureMixtureMisfit(
         statistic=float(stat), pvalue=pvalue, auc=float(auc_all), prior=p,
         source_prior=source, classes=classes,
-        effective_rows=(_kish(w_u), _kish(w_l)), folds=int(folds),
+        effective_rows=(n_u, n_l), folds=int(folds),
         feature_names=names, column_distance=dist, column_pvalue=col_p,
         column_pvalue_holm=holm, column_rank_share=share, column_mean_shift=shift,
         flagged_columns=flagged, column_level=col_level,
-        combined_pvalue=float(min(1.0, 2.0 * min(pvalue, float(np.min(holm))))))
+        combined_pvalue=float(min(1.0, 2.0 * min(pvalue, float(np.min(holm))))),
+        power=power, power_note=_power_note(power, n_u, n_l, classes, p, y_idx, w_l))
     if level is not None and result.combined_pvalue < level:
         warnings.warn(misfit_message("feature_mixture_misfit", result),
                       FeatureMixtureMisfitWarning, stacklevel=2)
+    elif level is not None and result.power_note:
+        warnings.warn(low_power_message("feature_mixture_misfit", result),
+                      FeatureCheckPowerWarning, stacklevel=2)
     return result
+
+
+def check_power(n_u: float, n_l: float, level: float) -> float:
+    """The power figure of :class:`FeatureMixtureMisfit` (``power``): a one-sided rank test at
+    ``level / 2`` on ``n_u`` and ``n_l`` effective rows against an ideal discriminator's AUC
+    for one normal column slid by :data:`POWER_SLIDE_SD` standard deviations, on the
+    Mann-Whitney statistic's null spread ``sqrt((1/n_u + 1/n_l) / 12)`` (Noether 1987)."""
+    if not (n_u > 0 and n_l > 0):
+        return 0.0
+    effect = float(norm.cdf(POWER_SLIDE_SD / np.sqrt(2.0))) - 0.5
+    sd = float(np.sqrt((1.0 / n_u + 1.0 / n_l) / 12.0))
+    return float(norm.cdf(effect / sd - norm.isf(level / 2.0)))
+
+
+def _power_note(power: float, n_u: float, n_l: float, classes: np.ndarray, p: np.ndarray,
+                y_idx: np.ndarray, w_l: np.ndarray) -> str:
+    """Why the power is low (empty where it is not): the two sides' effective rows and the
+    labelled class that weighs most on the re-weighted side's effective count."""
+    if not power < LOW_POWER:
+        return ""
+    rows = np.bincount(y_idx[w_l > 0], minlength=classes.size)
+    load = np.where(rows > 0, p**2 / np.maximum(rows, 1), 0.0)  # each class's part of 1/n_l
+    c = int(np.argmax(load))
+    lean = (f" (re-weighted to the estimated shares: class {plain(classes[c])!r} carries "
+            f"{p[c]:.0%} of the weight on {int(rows[c])} labelled row(s))" if n_l <= n_u else "")
+    return (f"it rests on {n_u:.1f} effective new rows and {n_l:.1f} effective labelled "
+            f"rows{lean}, where a rank test would see one column slid by {POWER_SLIDE_SD:g} "
+            f"standard deviation with probability about {power:.2f} at most, so a large p-value "
+            "is no evidence that the features fit")
+
+
+def low_power_message(who: str, result: FeatureMixtureMisfit) -> str:
+    """The :class:`FeatureCheckPowerWarning` text."""
+    return (f"{who}: the feature check found no misfit (p = {result.combined_pvalue:.2g}), but "
+            f"it could hardly have found one: {result.power_note}. Label more rows (of the "
+            "class named, if one is) or check a larger batch; until then the check neither "
+            "supports nor questions the adapted shares.")
 
 
 def misfit_message(who: str, result: FeatureMixtureMisfit, top: int = 3) -> str:
