@@ -1859,6 +1859,22 @@ class PriorShiftWrapper(HeldOutClassifierBase):
                     "where p < 0.05) to move only on firm evidence.")
         warnings.warn(what, NoShiftHarmWarning, stacklevel=3)
 
+    def _moved_scores_note(self) -> str:
+        """Where the shift test rejects firmly (p < 0.01): a sentence saying that this is
+        evidence the scores moved, not that the share did. On natural splits (rows of another
+        period or group resampled to the labelled rows' class shares, so that no re-weighting
+        is right) ``ImprecisePriorWarning`` was the only warning on adapted log losses up to
+        1.44 x no adjustment, the move made on p = 0.0003 (``benchmarks/shift_natural_splits.py``;
+        docs/evidence/prior_shift_log.md, "The feature check's power on few labelled rows")."""
+        p = float(getattr(self, "shift_pvalue_", np.nan))
+        if not (p < 0.01) or self.adaptation_weight_ <= 0:
+            return ""
+        return (f" The shift test's p = {p:.2g} says the scores moved, not why: if these rows "
+                "come from another period, site or group, their features may have moved instead "
+                "of (or beside) the class shares, and then the move itself is wrong, not only "
+                "imprecise; feature_check_rows= tests that, and a few labelled rows of the new "
+                "group settle it.")
+
     def _warn_imprecise(self, interval: Any, identified: bool) -> None:
         """Warn (once) when the interval of a class share reaches more than ``IMPRECISE_REACH``
         (0.25) from ``target_prior_``, below or above: the estimate can then be that far from
@@ -1894,7 +1910,7 @@ class PriorShiftWrapper(HeldOutClassifierBase):
             "not the estimate. predict_proba moves only as far as the shift evidence allows "
             f"(adaptation_weight_ = {self.adaptation_weight_:.3g}). For a firmer estimate, label "
             "more rows of each class, adapt on more rows, or use a model that separates the "
-            "classes better.",
+            "classes better." + self._moved_scores_note(),
             ImprecisePriorWarning,
             stacklevel=3,
         )
