@@ -61,6 +61,9 @@ Run: nice python benchmarks/shift_natural_splits.py --quick      (seed 1, 300 la
      nice python benchmarks/shift_natural_splits.py --sets NAME ... --feature-check-rows 2000
                                                    --no-feature-check  (the check inside adapt)
      nice python benchmarks/shift_natural_splits.py --classify F1.csv F2.csv
+                                                  (also: covshift cells by warning class; with
+                                                  feature_check_rows, where the check's power
+                                                  is below 0.5 and FeatureCheckPowerWarning came)
 Results: docs/evidence/prior_shift_log.md, "Natural splits: periods, sites and groups
 (session 32)".
 """
