@@ -117,3 +117,33 @@ def test_adapt_and_monitor_warn_where_the_estimate_leans_on_few_rows():
     lean = table[table["batch"] == "lean"][0]["feature_check"]
     assert lean.power < 0.5 and lean.power_note
     assert table[table["batch"] == "even"][0]["feature_check"].power_note == ""
+
+
+def test_imprecise_after_a_firm_shift_test_says_the_move_may_be_wrong():
+    # one weak feature, 60 labelled rows, a batch of 170 malignant and 30 benign rows: the shift
+    # test rejects firmly (p about 0.001) and the move is made on a wide interval (seed 0), or
+    # the test does not reject and nothing moves (seed 2: p about 0.25). Only the first is told
+    # that the scores moving need not mean the share moved.
+    from probwrap.shift import ImprecisePriorWarning
+
+    said = {}
+    for seed in (0, 2):
+        rng = np.random.default_rng(seed)
+        idx = rng.permutation(Y_BC.size)
+        lab, pool = idx[:60], idx[60:]
+        X = X_BC[["mean smoothness"]]
+        wrapper = PriorShiftWrapper(make_pipeline(StandardScaler(), LogisticRegression()),
+                                    random_state=0)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            wrapper.fit(X.iloc[lab], Y_BC[lab])
+        batch = np.concatenate([pool[Y_BC[pool] == 0][:170], pool[Y_BC[pool] == 1][:30]])
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            wrapper.adapt(X.iloc[batch])
+        msgs = [str(w.message) for w in caught if w.category is ImprecisePriorWarning]
+        assert len(msgs) == 1
+        firm = wrapper.shift_pvalue_ < 0.01 and wrapper.adaptation_weight_ > 0
+        assert ("says the scores moved, not why" in msgs[0]) == firm
+        said[seed] = firm
+    assert said == {0: True, 2: False}
