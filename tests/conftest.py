@@ -70,6 +70,7 @@ XDIST_GROUPS = {
     "tests/test_spark_batch_labels_missing.py::": "spark",
     "tests/test_spark_mixture_check_repeats.py::": "spark",
     "tests/test_spark_repeat_check_feature_selected.py::": "spark",
+    "tests/test_spark_refused_partition_workers.py::": "spark",
 }
 
 

@@ -500,12 +500,14 @@ def _tally_partitions(
 
 
 def _drain(batches: Any) -> None:
-    """Read the rest of a partition's batches after a refused batch. PySpark's worker is reused
+    """Read the rest of a partition's batches after a refused batch (the tallies, and
+    ``SparkRows.map_reduce`` / ``persist`` / ``SparkBlocks.reduce``). PySpark's worker is reused
     for the next task only when its input was read to the end (``pyspark/worker.py``: otherwise
     it tells the JVM not to reuse it and exits), so a user error that left rows unread made the
-    next Spark job start new Python workers (about 8 s each under load on a 2-core machine).
-    Reading costs at most what the tally would have; a second failure while reading is left to
-    the first one's report."""
+    next Spark job start new Python workers (about 8 s each under load on a 2-core machine;
+    ``benchmarks/spark_refused_partition.py``, docs/evidence/prior_shift_log.md). Reading costs
+    at most what the tally would have; a second failure while reading is left to the first
+    one's report."""
     try:
         for _ in batches:
             pass
@@ -730,6 +732,7 @@ class SparkBlocks:
                         r = fn(block, *args)
                         total = r if total is None else _combine(total, r)
             except Exception as exc:  # noqa: BLE001 - raised on the driver (see _WorkerError)
+                _drain(batches)
                 yield pd.DataFrame({"partition": [_partition_id()], "value": [_failure(exc)]})
                 return
             if total is not None:
@@ -803,6 +806,7 @@ class SparkRows:
                     r = f(*a, *key, *_split(*spec, pdf))
                     total = r if total is None else _combine(total, r)
             except Exception as exc:  # noqa: BLE001 - raised on the driver (see _WorkerError)
+                _drain(batches)
                 yield pd.DataFrame({"partition": [_partition_id()], "value": [_failure(exc)],
                                     "dropped": [False]})
                 return
@@ -835,6 +839,7 @@ class SparkRows:
                 for pdf in _chunks(batches, PERSIST_ROWS):
                     yield pd.DataFrame({"block": [pickle.dumps(f(*a, *_split(*spec, pdf)))]})
             except Exception as exc:  # noqa: BLE001 - kept as a block, raised on the driver
+                _drain(batches)
                 yield pd.DataFrame({"block": [_failure(exc)]})
 
         cached = self._frame.select(*self._columns).mapInPandas(make_blocks, "block binary")
