@@ -223,8 +223,9 @@ def cell_labels(cells: Any, n_rows: int) -> np.ndarray:
     if arr.ndim != 1 or arr.shape[0] != n_rows:
         raise ValueError(f"`cells` must be 1-d with one cell label per row ({n_rows}); got "
                          f"shape {arr.shape}.")
+    # (an object array's gaps are None, NaN or NA: pandas 3's text columns hold NaN there)
     if (arr.dtype.kind == "f" and np.any(np.isnan(arr))) or (
-            arr.dtype.kind == "O" and any(v is None for v in arr.tolist())):
+            arr.dtype.kind == "O" and any(_missing_label(v) for v in arr.tolist())):
         raise ValueError("`cells` contains missing labels; give every row a cell.")
     try:
         _, codes = np.unique(arr, return_inverse=True)

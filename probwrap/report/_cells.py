@@ -52,7 +52,7 @@ import numpy as np
 from scipy.stats import chi2
 
 from .._heldout import feature_cells
-from .._validation import plain, whole_counts
+from .._validation import _is_missing, plain, whole_counts
 
 __all__ = ["ResamplingUnit", "resampling_unit", "unit_words", "DISPERSION_NOTE_RATIO",
            "DISPERSION_NOTE_PVALUE", "bin_dispersion", "bin_intervals", "frequency_table_levels",
@@ -111,8 +111,10 @@ def _given_cells(cells: Any, n: int) -> np.ndarray:
                          f"shape {arr.shape}.")
     if arr.dtype.kind == "f" and np.any(np.isnan(arr)):
         raise ValueError("`cells` contains NaN; give every labelled row a cell.")
-    if arr.dtype.kind == "O" and any(v is None for v in arr.tolist()):
-        raise ValueError("`cells` contains None; give every labelled row a cell.")
+    if arr.dtype.kind == "O" and any(_is_missing(v) for v in arr.tolist()):
+        # (None, NaN or NA: pandas 3's text columns hold NaN where a value is missing)
+        raise ValueError("`cells` contains missing labels (None, NaN or NA); give every "
+                         "labelled row a cell.")
     try:
         _, codes = np.unique(arr, return_inverse=True)
     except TypeError as exc:

@@ -22,7 +22,7 @@ from typing import Any
 import numpy as np
 from scipy import sparse
 
-from .._validation import plain
+from .._validation import _is_missing, plain
 
 __all__ = ["cell_design_rows", "check_cells", "cell_mean_cov", "cell_sums", "cell_totals_kish"]
 
@@ -40,8 +40,7 @@ def check_cells(cells: Any, n_rows: int, name: str = "cells") -> np.ndarray | No
         )
     if arr.dtype.kind == "f" and np.isnan(arr).any():
         raise ValueError(f"`{name}` contains missing labels (NaN); give every row a cell.")
-    if arr.dtype.kind == "O" and any(v is None or (isinstance(v, float) and v != v)
-                                     for v in arr.tolist()):
+    if arr.dtype.kind == "O" and any(_is_missing(v) for v in arr.tolist()):  # None, NaN, NA
         raise ValueError(f"`{name}` contains missing labels; give every row a cell.")
     try:
         _, codes = np.unique(arr, return_inverse=True)
