@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from _cli_helpers import EXACT_FLOATS
 from probwrap.calibration import map_from_dict, proba_to_log_odds
 from probwrap.cli import main
 
@@ -72,7 +73,7 @@ def test_blank_scores_come_through_empty_with_a_counting_warning(fitted, tmp_pat
     assert f"7 of {p.shape[0]} rows have no score in column 'risk'" in warning[0]
     assert "rows 5, 12, 22, 23, 42, ... (counting the header as row 1)" in warning[0]
     assert "--missing refuse" in warning[0]
-    out = pd.read_csv(tmp_path / "out.csv", dtype={"parcel": str}, float_precision="round_trip")
+    out = pd.read_csv(tmp_path / "out.csv", dtype={"parcel": str}, **EXACT_FLOATS)
     assert out.shape[0] == p.shape[0]  # every row written, in order
     assert out["parcel"].tolist() == [f"p{i:04d}" for i in range(p.shape[0])]
     blank = np.zeros(p.shape[0], dtype=bool)

@@ -26,7 +26,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from _cli_helpers import cancer_held_out
+from _cli_helpers import EXACT_FLOATS, cancer_held_out
 from _cli_helpers import run_cli as run
 
 pytestmark = pytest.mark.usefixtures("no_progress_lines")
@@ -121,14 +121,14 @@ def test_percent_signs_are_read_with_scale_percent(cancer, tmp_path, capsys, sep
                          "--scores", bare, "--score-column", "score", "--scale", "percent",
                          "--out", "-")
     assert code == 0, err
-    back = pd.read_csv(io.StringIO(out), float_precision="round_trip")
+    back = pd.read_csv(io.StringIO(out), **EXACT_FLOATS)
     np.testing.assert_array_equal(back["score"].to_numpy(), numbers.astype(float).to_numpy())
     code, signed_out, err = run(capsys, "calibrate", "apply", "--map", tmp_path / "m.json",
                                 "--scores", signed, "--score-column", "score", "--scale",
                                 "percent", "--out", "-")
     assert code == 0, err
     got = pd.read_csv(io.StringIO(signed_out), sep=sep, decimal="," if decimal_comma else ".",
-                      float_precision="round_trip")
+                      **EXACT_FLOATS)
     np.testing.assert_array_equal(got["score"].to_numpy(), back["score"].to_numpy())
     np.testing.assert_array_equal(got["calibrated_probability"].to_numpy(),
                                   back["calibrated_probability"].to_numpy())

@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from _cli_helpers import EXACT_FLOATS
 from _cli_helpers import run_cli as run
 
 pytestmark = pytest.mark.usefixtures("no_progress_lines")
@@ -247,7 +248,7 @@ def test_spreadsheet_sep_line_is_read_and_written_back(scored, capsys, tmp_path,
     assert lines[0] == f"sep={sep}"
     assert lines[1].split(sep) == ["score", "label", "w", "calibrated_probability"]
     back = pd.read_csv(out, skiprows=1, sep=sep, decimal=decimal,
-                       float_precision="round_trip")
+                       **EXACT_FLOATS)
     np.testing.assert_array_equal(back["score"].to_numpy(), frame["score"].to_numpy())
 
 

@@ -23,7 +23,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from _cli_helpers import cancer_held_out
+from _cli_helpers import EXACT_FLOATS, cancer_held_out
 from _cli_helpers import run_cli as run
 
 pytestmark = pytest.mark.usefixtures("no_progress_lines")
@@ -145,7 +145,7 @@ def test_csv_output_is_separated_as_its_extension_says(cancer, tmp_path, capsys,
         assert text.splitlines()[0] == written.join(
             ["id", "score", "y", "calibrated_probability"])
         back = pd.read_csv(tmp_path / f"out{ext}", sep=written, decimal=decimal,
-                           float_precision="round_trip")
+                           **EXACT_FLOATS)
         np.testing.assert_array_equal(back["score"], cancer["score"])
         results[ext] = back["calibrated_probability"].to_numpy()
         if written != sep:

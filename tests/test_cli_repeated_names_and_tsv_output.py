@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from _cli_helpers import cancer_held_out
+from _cli_helpers import EXACT_FLOATS, cancer_held_out
 from _cli_helpers import run_cli as run
 
 pytestmark = pytest.mark.usefixtures("no_progress_lines")
@@ -137,7 +137,7 @@ def test_calibrate_apply_writes_both_columns_back_and_refuses_parquet(files, tmp
                            "--score-column", "score", "--out", out)
         assert code == 0, err
         outputs[out.name] = out
-    expected = pd.read_csv(outputs["plain-out.csv"], float_precision="round_trip")[
+    expected = pd.read_csv(outputs["plain-out.csv"], **EXACT_FLOATS)[
         "calibrated_probability"].to_numpy()
     for name, sep in (("twice-out.csv", ","), ("twice-out.tsv", "\t")):
         with open(outputs[name], newline="", encoding="utf-8") as handle:
@@ -172,7 +172,7 @@ def test_tsv_output_and_input(files, tmp_path, capsys):
     fitted = tmp_path / "map.json"
     assert run(capsys, "calibrate", "fit", "--scores", plain, "--score-column", "score",
                "--label-column", "y", "--method", "platt", "--out", fitted)[0] == 0
-    frame = pd.read_csv(plain, float_precision="round_trip")
+    frame = pd.read_csv(plain, **EXACT_FLOATS)
     semicolon = tmp_path / "semicolon.csv"
     frame.to_csv(semicolon, sep=";", decimal=",", index=False)
     outs = {}
@@ -184,11 +184,11 @@ def test_tsv_output_and_input(files, tmp_path, capsys):
         outs[path.stem] = out
     first = outs["plain"].read_text(encoding="utf-8").splitlines()
     assert first[0] == "id\tscore\ty\tw\tcalibrated_probability"
-    table = pd.read_csv(outs["plain"], sep="\t", float_precision="round_trip")
-    reference = pd.read_csv(tmp_path / "plain.csv", float_precision="round_trip")
+    table = pd.read_csv(outs["plain"], sep="\t", **EXACT_FLOATS)
+    reference = pd.read_csv(tmp_path / "plain.csv", **EXACT_FLOATS)
     np.testing.assert_array_equal(table["score"].to_numpy(), reference["score"].to_numpy())
     comma = pd.read_csv(outs["semicolon"], sep="\t", decimal=",",
-                        float_precision="round_trip")
+                        **EXACT_FLOATS)
     assert "," in outs["semicolon"].read_text(encoding="utf-8").splitlines()[1]
     np.testing.assert_array_equal(comma["calibrated_probability"].to_numpy(),
                                   table["calibrated_probability"].to_numpy())

@@ -29,6 +29,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from _cli_helpers import EXACT_FLOATS
 from _cli_helpers import run_cli as run
 from probwrap.calibration import map_from_dict, proba_to_log_odds
 from probwrap.cli import main
@@ -186,7 +187,7 @@ def test_a_real_pipe(files, tmp_path):
                            input=(root / "held.parquet").read_bytes(), capture_output=True,
                            env=env, timeout=300)
     assert apply.returncode == 0, apply.stderr.decode()
-    back = pd.read_csv(io.BytesIO(apply.stdout), float_precision="round_trip")
+    back = pd.read_csv(io.BytesIO(apply.stdout), **EXACT_FLOATS)
     assert list(back.columns) == ["id", "risk", "y", "calibrated_probability"]
     expected = map_from_dict(json.loads(fit.stdout)).predict(
         proba_to_log_odds(frame["risk"].to_numpy()))
