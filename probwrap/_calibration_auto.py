@@ -75,6 +75,11 @@ _TWO_FOLD_CELLS = 20_000
 #: than this many paired standard errors above the best one's.
 _RACE_SE = 4.0
 
+#: After the first-fold race, a candidate left out against a map that is not eligible in the end
+#: is scored on every fold after all (``_AutoChoice._fold_losses``); ``False`` switches this off
+#: (for benchmarks/auto_small_separated.py's comparisons).
+_RESUME_RACED = True
+
 #: ``method="auto"``'s order-based candidates (binning, isotonic regression, Venn-Abers) are not
 #: eligible when the smallest class has fewer than this many held-out rows (of weight > 0):
 #: their levels near that class rest on a few of its rows per fold, and on such sets their
@@ -561,8 +566,32 @@ class _AutoChoice:
         Candidates are scored fold by fold. After the first fold, a candidate whose loss on
         that fold's rows is more than :data:`_RACE_SE` paired standard errors above the best
         eligible candidate's is left out of the remaining folds (it cannot plausibly come back
-        within one standard error); ``notes`` says so. Returns ``{name: (per_row, boundary)}``.
+        within one standard error); ``notes`` says so. If the candidate it was left out against
+        is not eligible in the end (its fit reached a boundary in a later fold, or failed), the
+        candidate is scored on every fold after all: a race lost to a map that cannot be chosen
+        is no evidence against it (scikit-learn's digits 0/1/2/7, a frozen logistic regression,
+        301 rows: temperature and Platt scaling were left out against vector scaling, which
+        then separated the classes in the second fold, and binning, eight times vector
+        scaling's cross-validated loss, was kept at 2.6x the test log loss of scikit-learn's
+        sigmoid; benchmarks/auto_small_separated.py, docs/evidence/small_data_log.md, "Two
+        large multiclass misses on wine and digits"). Returns ``{name: (per_row, boundary)}``.
         """
+        raced: dict[str, str] = {}  # candidate left out after the first fold -> the map it lost to
+        out = self._fold_losses_raced(names, scores, ovr, y, w, fold_masks, notes, raced)
+        while True:
+            kept = {nm for nm, (_, boundary) in out.items() if boundary is None}
+            resume = [nm for nm in names if nm in raced and raced[nm] not in kept]
+            if not resume or not _RESUME_RACED:
+                return {nm: out[nm] for nm in names if nm in out}  # in the order given
+            for nm in resume:
+                del raced[nm]
+                notes.pop(nm, None)
+            out.update(self._fold_losses_raced(resume, scores, ovr, y, w, fold_masks, notes,
+                                               raced))
+
+    def _fold_losses_raced(self, names, scores, ovr, y, w, fold_masks, notes, raced):
+        """One pass of :meth:`_fold_losses` over ``names``; candidates left out after the first
+        fold are recorded in ``raced`` with the name of the map they were left out against."""
         states = {
             nm: {"per_row": np.empty(y.shape[0]), "boundary": None, "seen": []} for nm in names
         }
@@ -603,6 +632,7 @@ class _AutoChoice:
                             f"left out after fold {f}: log loss {dbar:.4g} above {plain(best)!r} there, "
                             f"{dbar / se if se > 0 else np.inf:.1f} standard errors"
                         )
+                        raced[nm] = best
                         active.remove(nm)
                         del states[nm]
         out = {}
