@@ -304,6 +304,21 @@ _PASS_OVER_DECREASING_PLATT = True
 #: very few rows and on separated multiclass draws); ``0`` switches the rule off.
 _PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS = 100
 
+#: Two classes, a frozen model whose scores on the held-out rows (of weight > 0) take at most this
+#: many distinct values: where the one-standard-error rule keeps temperature scaling, Platt scaling
+#: is kept instead (also when the fold race left it out: on two values that race rewards a
+#: temperature pushed to near 0/1 by a draw whose values hold one class each), unless its map,
+#: fitted on all held-out rows, decreases. With two score values any non-decreasing map has two
+#: free outputs, and the best it can give is each value's observed share, smoothed toward the
+#: middle for small counts; Platt's two parameters reach that pair (each value gets the mean of
+#: Platt's targets over its rows, (N+ + 1) / (N+ + 2) for a positive and 1 / (N- + 2) for a
+#: negative, a Laplace-type smoothing: Platt 1999, section 2.2, from memory); a temperature, with
+#: one parameter and no intercept, reaches it only by chance. Beta scaling (also exact on two
+#: values, without the smoothing) is left as it is: replacing it lost on the same cells. Measured
+#: with benchmarks/two_valued_frozen.py (docs/evidence/small_data_log.md, the section on frozen
+#: models with two distinct scores); ``0`` switches the rule off.
+_PLATT_FOR_FROZEN_MAX_DISTINCT = 2
+
 
 def _boundary_of(cal: Any) -> str | None:
     """Why a fitted map (or any map of a one-vs-rest list) sits at a boundary, or None."""
@@ -873,6 +888,12 @@ class _AutoChoice:
                             and scores_out["platt"][0] - means[best] <= scores_out["platt"][1]))
                         and self._temperature_off_shares(scores, y, w, notes, best, means)):
                     continue  # to the next map in order: Platt scaling when within an error
+                if (name == "temperature" and binary and ho.n_folds == 0
+                        and not decreasing_passed
+                        and ("platt" in eligible
+                             or notes.get("platt", "").startswith("left out after fold"))
+                        and self._platt_for_few_scores(scores, y, w, notes)):
+                    return "platt", scores_out, notes
                 if (binary and ho.n_folds == 0 and name in ("temperature", "beta")
                         and n_rows < _PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS
                         and "platt" in eligible and not decreasing_passed
@@ -945,6 +966,31 @@ class _AutoChoice:
                 f"{plain(self.classes_[k])!r}: {float(wn @ q[:, k]):.3g} against "
                 f"{float(wn @ t[:, k]):.3g})"
             )
+        notes["temperature"] = text if "temperature" not in notes else (
+            notes["temperature"] + "; " + text)
+        return True
+
+    def _platt_for_few_scores(self, scores, y, w, notes) -> bool:
+        """True (and noted) when a frozen model's binary ``scores`` take at most
+        ``_PLATT_FOR_FROZEN_MAX_DISTINCT`` distinct values on the rows of weight > 0 and Platt's
+        map fitted on all of them does not decrease: see ``_PLATT_FOR_FROZEN_MAX_DISTINCT``."""
+        distinct = int(np.unique(scores[w > 0]).shape[0])
+        if distinct > _PLATT_FOR_FROZEN_MAX_DISTINCT:
+            return False
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                platt = self._fit_map(PlattMap(), scores, y, w)
+            except (ValueError, FloatingPointError, np.linalg.LinAlgError):
+                return False
+        if not float(getattr(platt, "slope_", 0.0)) >= 0.0:
+            return False  # never trade a map for a decreasing one
+        text = (
+            f"kept by the one-standard-error rule but replaced by 'platt': the frozen model's "
+            f"scores take {distinct} distinct value(s) on the held-out rows, so the best "
+            "non-decreasing map is each value's smoothed share, which Platt scaling's two "
+            "parameters reach and a temperature (no intercept) does not"
+        )
         notes["temperature"] = text if "temperature" not in notes else (
             notes["temperature"] + "; " + text)
         return True
