@@ -4,11 +4,14 @@ The breast-cancer held-out scores of ``cli_awkward_files.py`` (289 rows; an ``am
 of invented whole-number weights 1,000-4,999 added so that thousands separators are met), written
 as European CSV, with thousands separators, quoted numbers, Windows line ends, a byte-order
 mark, trailing empty columns, rows of bare separators at the end, labels ``Yes``/``No``,
-``Y``/``N`` and `` 1``/``0 `` with spaces, scores as ``12.5%`` and as quoted ``"0,73"``, an
-Excel workbook of two sheets, an empty file, a header alone, one row, a Parquet file naming a
-column twice, a very long path with spaces, and standard input (``-``). Each file goes through
+``Y``/``N`` and `` 1``/``0 `` with spaces, scores as ``12.5%`` and as quoted ``"0,73"``,
+weights as ``65%``, an Excel and an OpenDocument workbook of two sheets, an empty file, a
+header alone, one row, a Parquet file naming a column twice, a very long path with spaces,
+and standard input (``-``). Each file goes through
 ``cutoff``, ``calibrate fit``, ``calibrate apply`` (a map fitted on the plain file, written to
-``.csv``), ``prevalence --source-prevalence`` and (without ``--quick``) ``report``.
+``.csv``), ``prevalence --source-prevalence`` (with the file's weights where it has them),
+``prevalence --reference`` (the file as the labelled reference of the clean file's scores,
+with its weights as ``--reference-weight-column``) and (without ``--quick``) ``report``.
 
 The table prints each verb's exit code, and whether the result equals the plain file's
 (``same``: the cutoff JSON, the map's fitted parameters, every calibrated probability, the
@@ -61,6 +64,26 @@ def _workbook(path: Path, frame: pd.DataFrame) -> None:
         z.writestr("xl/worksheets/sheet1.xml",
                    sheet([list(frame.columns)] + frame.astype(str).values.tolist()))
         z.writestr("xl/worksheets/sheet2.xml", sheet([["exported"], ["5 December 2026"]]))
+
+
+def _ods(path: Path, frame: pd.DataFrame) -> None:
+    """A minimal OpenDocument spreadsheet of two sheets (the scores and a notes sheet)."""
+    def table(name, rows):
+        cells = "".join(
+            "<table:table-row>" + "".join(
+                f'<table:table-cell office:value-type="string"><text:p>{v}</text:p>'
+                "</table:table-cell>" for v in row) + "</table:table-row>" for row in rows)
+        return f'<table:table table:name="{name}">{cells}</table:table>'
+    ns = ('xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
+          'xmlns:table="urn:oasis:names:tc:opendocument:xmlns:table:1.0" '
+          'xmlns:text="urn:oasis:names:tc:opendocument:xmlns:text:1.0"')
+    with zipfile.ZipFile(path, "w") as z:
+        z.writestr("mimetype", "application/vnd.oasis.opendocument.spreadsheet")
+        z.writestr("content.xml", (
+            f'<office:document-content {ns}><office:body><office:spreadsheet>'
+            + table("scores", [list(frame.columns)] + frame.astype(str).values.tolist())
+            + table("notes", [["exported"], ["5 December 2026"]])
+            + "</office:spreadsheet></office:body></office:document-content>"))
 
 
 def _parquet_twice(path: Path, b: pd.DataFrame) -> None:
@@ -127,7 +150,11 @@ def variants(b: pd.DataFrame) -> dict:
         p, index=False, sep=";"), extra=("--scale", "percent"), clean=percent_plain)
     add("scores as quoted '0,73' in a , file", lambda p: b.assign(
         score=b.score.map(lambda x: f"{x}".replace(".", ","))).to_csv(p, index=False))
+    add("amount as '65%' (weight)", lambda p: b.assign(
+        amount=(b.amount / 50).map(lambda x: f"{x:.2f}%")).to_csv(p, index=False),
+        weight="amount")
     add("Excel workbook, two sheets", lambda p: _workbook(p, b), ext=".xlsx")
+    add("OpenDocument workbook, two sheets", lambda p: _ods(p, b), ext=".ods")
     add("empty file", lambda p: text(p, ""))
     add("header only", lambda p: text(p, "id,score,y,amount\n"))
     add("one row", lambda p: b.head(1).to_csv(p, index=False))
@@ -190,9 +217,10 @@ def main(quick: bool = False) -> None:
     b.to_csv(plain, index=False)
     common = ("--score-column", "score")
 
-    def verbs(path, i, pos, extra, weight):
+    def verbs(path, i, pos, extra, weight, clean_path):
         posa = () if pos is None else ("--positive-label", pos)
         wa = () if weight is None else ("--weight-column", weight)
+        rwa = () if weight is None else ("--reference-weight-column", weight)
         cols = (*common, "--label-column", "y", *posa, *extra)
         out = {
             "cutoff": ["cutoff", "--scores", path, *cols, *wa, *costs, "--resamples", 0,
@@ -202,8 +230,12 @@ def main(quick: bool = False) -> None:
             "calibrate apply": ["calibrate", "apply", "--map", folder / "plain-map.json",
                                 "--scores", path, *common, *extra,
                                 "--out", folder / f"a{i}.csv"],
-            "prevalence": ["prevalence", "--unlabelled", path, *common, *extra,
+            "prevalence": ["prevalence", "--unlabelled", path, *common, *extra, *wa,
                            "--source-prevalence", 0.6, "--resamples", 0, "--format", "json"],
+            # the file as the labelled reference of the clean file's scores
+            "prevalence --reference": ["prevalence", "--unlabelled", clean_path, *common,
+                                       *extra, "--reference", path, "--label-column", "y",
+                                       *posa, *rwa, "--resamples", 0, "--format", "json"],
         }
         if not quick:
             out["report"] = ["report", "--scores", path, *cols, *costs, "--resamples", 10,
@@ -224,7 +256,7 @@ def main(quick: bool = False) -> None:
             path = folder / f"clean{k}.csv"
             clean(path)
             got = {}
-            for verb, argv in verbs(path, f"clean{k}", None, extra, weight).items():
+            for verb, argv in verbs(path, f"clean{k}", None, extra, weight, path).items():
                 code, out, err = run_with_input(argv, None)
                 assert code == 0, err
                 got[verb] = out
@@ -232,6 +264,7 @@ def main(quick: bool = False) -> None:
             got["apply"] = _calibrated(folder / f"aclean{k}.csv")
             if not quick:
                 got["report"] = _page(folder / f"rclean{k}.html", path)
+            got["path"] = path
             expected[key] = got
         return expected[key]
 
@@ -245,11 +278,11 @@ def main(quick: bool = False) -> None:
         writer(path)
         stdin = path.read_bytes() if "stdin" in ext else None
         given = "-" if stdin is not None else path
-        for verb, argv in verbs(given, i, pos, extra, weight).items():
+        for verb, argv in verbs(given, i, pos, extra, weight, want["path"]).items():
             code, out, err = run_with_input(argv, stdin)
             result = ""
             if code == 0:
-                if verb in ("cutoff", "prevalence"):
+                if verb.startswith(("cutoff", "prevalence")):
                     same = _comparable(out) == _comparable(want[verb])
                     key = "cutoff" if verb == "cutoff" else "prevalence"
                     result = f"{key} {json.loads(out)[key]:.6g}"

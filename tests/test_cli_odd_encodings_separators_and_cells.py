@@ -210,7 +210,9 @@ def test_weight_in_percent_is_not_told_to_be_a_probability(cancer, tmp_path, cap
                        "--cost-fn", 5)
     assert code == 1
     assert "column 'w', row 6" in err and "(--weight-column)" in err
-    assert "write the number without it (12% as 0.12, or as 12" in err
+    # the share only: "or as 12" made whole numbers, which prevalence counts as cases
+    assert "without the sign (12% as 0.12; only the ratios of weights matter)" in err
+    assert "(1 of 289 rows hold one: row 6 (counting the header as row 1))" in err
     assert "scores" not in err
 
 

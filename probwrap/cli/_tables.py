@@ -602,7 +602,13 @@ _NOT_TABLES = {
 def _sheets_text(path: Path) -> str:
     """"" or, for an Excel workbook of several sheets, the names of its sheets and that a
     spreadsheet saves only the sheet shown as CSV (a best-effort look: "" when the file is not
-    such a workbook)."""
+    such a workbook); for an OpenDocument spreadsheet (.ods), how to save the sheet as CSV."""
+    if path.suffix.lower() == ".ods":
+        # the sheet names are in content.xml beside the whole table, and reading .ods needs
+        # odfpy, which is no dependency: say how to save the sheet without naming the sheets
+        return ("; a spreadsheet saves only the sheet shown as CSV: open the file, show the "
+                "sheet holding the scores, then save a copy as Text CSV (.csv) with UTF-8 "
+                "characters, commas between fields and a decimal point")
     if path.suffix.lower() not in (".xlsx", ".xlsm"):
         return ""
     try:
@@ -1191,7 +1197,8 @@ def numeric_column(frame: Any, column: str, path: str | Path, *, flag: str,
         what = ("the value is missing" + missing_count_text(path, series.isna().to_numpy())
                 if pd.isna(raw_value) else
                 f"{shown(raw_value)} is not a finite number"
-                f"{hint or _number_hint(raw_value, flag)}"
+                f"{hint or _percent_weights_hint(series, raw_value, path, flag)}"
+                f"{'' if hint else _number_hint(raw_value, flag)}"
                 f"{_marker_hint(series, raw_value, path)}"
                 f"{_header_again_hint(frame, series, raw_value, path)}"
                 f"{_units_line_hint(frame, series, row, raw_value)}"
@@ -1494,6 +1501,34 @@ def _labels_hint(series: Any, flag: str) -> str:
             "given to --label-column, swap the two column names")
 
 
+def _percent_weights_hint(series: Any, value: Any, path: str | Path, flag: str) -> str:
+    """After "'65%' is not a finite number" in a weight column: how many rows hold a percent
+    sign, which, and what to write. A weight is not read with its sign dropped: "65%" read as
+    65 makes a column of whole numbers, which ``prevalence`` counts as a count table of cases
+    (its interval narrowed to the cases'), while the share 0.65 is weighed by Kish's effective
+    size, so the two readings give different intervals and tests (measured in
+    benchmarks/cli_awkward_files_second.py, docs/evidence/command_line_log.md); "" for another
+    column or value."""
+    if "weight" not in flag or not str(value).strip().strip('"').strip().endswith("%"):
+        return ""
+    signed = series.map(lambda v: isinstance(v, str) and v.strip().strip('"').strip()
+                        .endswith("%")).to_numpy(dtype=bool)
+    text = str(value).strip().strip('"').strip()
+    bare = text[:-1].strip()
+    share = _number(bare)
+    if share is None and re.fullmatch(r"[-+]?\d+,\d+", bare):
+        share = _number(bare.replace(",", "."))  # 65,5 % (a decimal comma)
+    written = f"{share / 100:.15g}" if share is not None else ""
+    if "," in bare:
+        written = written.replace(".", ",")  # the file's decimal comma
+    example = f"{clean(text)} as {written}; " if written else ""
+    return (f"; a percent sign is not read in a weight column ({int(signed.sum())} of "
+            f"{signed.shape[0]} rows hold one: {rows_text(path, np.flatnonzero(signed))}): "
+            f"write each weight as the share it stands for, without the sign ({example}only "
+            "the ratios of weights matter), not as a whole number of percent, which prevalence "
+            "would read as a count table of cases")
+
+
 def _number_hint(value: Any, flag: str = "--score-column") -> str:
     """Why a field that looks like a number was not read as one, or "" (``flag``: the option
     naming the column; the percent advice speaks of scores only for a score column)."""
@@ -1503,6 +1538,8 @@ def _number_hint(value: Any, flag: str = "--score-column") -> str:
     if percent is None and re.fullmatch(r"[-+]?\d+,(?:\d{1,2}|\d{4,})", bare):
         percent = _number(bare.replace(",", "."))  # 85,27 % (a decimal comma, not thousands)
     if text.endswith("%") and percent is not None:
+        if "weight" in flag:
+            return ""  # said by _percent_weights_hint
         if "score" not in flag and "class-columns" not in flag:
             # a weight of "12%" was told to "write scores as probabilities"
             return (f"; a percent sign is not read: write the number without it ({clean(text)} "
