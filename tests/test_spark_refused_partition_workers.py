@@ -5,16 +5,20 @@ PySpark hands a Python worker the next task only when the task read its input to
 new worker imports pandas, scikit-learn and SciPy again: 6-12 s for the next job on the shared
 2-core machine (``benchmarks/spark_refused_partition.py``, docs/evidence/prior_shift_log.md).
 The score tallies read the rest of a refused partition since 5 December 2026; before the same
-day's change ``SparkRows.map_reduce``, ``SparkRows.persist`` and ``SparkBlocks.reduce``
-stopped at the refused chunk or block, and the workers that refused exited.
+day's changes ``SparkRows.map_reduce``, ``SparkRows.persist``, ``SparkBlocks.reduce`` and the
+keys of the repeated-rows check (``spark_key_tallies``) stopped at the refused chunk or block,
+and the workers that refused exited (the keys' refusal also reached the user as PySpark's
+``PythonException`` with a Java stack trace, not the in-memory ValueError).
 
 Checked without timing: a block function defined here refuses its chunk with a message that
-names the Python worker's process id; after the refusal and one more job, that process is still
-running (a worker that is not reused exits right after its task). Chunks of 10 rows (the
+names the Python worker's process id; after the refusals on every path and one more job, each of
+those processes is still running (a worker that is not reused exits right after its task, so one
+job after all the refusals checks them all, and costs one job instead of one per path). Chunks
+of 10 rows (the
 executors' functions carry the module constants ``CHUNK_ROWS`` / ``PERSIST_ROWS`` with them),
 so each 59-row partition has rows after the refused chunk, as a partition of several million
 rows has. The users' messages are unchanged: a NaN weight in such a chunk gives the in-memory
-fit's message. Data: scikit-learn's bundled wine table (a multiclass logistic regression on
+fit's message (and, for the keys, the message of the same key function on the rows in memory). Data: scikit-learn's bundled wine table (a multiclass logistic regression on
 every third row, the other 118 rows in the Spark frame). Runs on the session-scoped ``spark`` fixture.
 """
 
@@ -33,6 +37,7 @@ from sklearn.preprocessing import StandardScaler
 
 import probwrap.scale._spark as spark_module
 from probwrap import CalibrationWrapper, PriorShiftWrapper
+from probwrap.scale._repeat_keys import key_block
 
 pytestmark = [
     pytest.mark.slow,
@@ -108,42 +113,53 @@ def _next_job(frame) -> int:
     return sum(r["n"] for r in frame.mapInPandas(count, "n long").collect())
 
 
-@pytest.mark.parametrize("path", ["tally", "map_reduce", "persist", "reduce"])
-def test_the_worker_that_refused_a_partition_runs_the_next_task(spark, wine, small_chunks,
-                                                                path):
+PATHS = ("tally", "map_reduce", "persist", "reduce", "keys")
+
+
+def _refuse(spark_frame, model, path: str) -> None:
+    """One refusal on ``path``: a chunk (or kept block) refused in each partition's worker."""
+    refuse_chunk, convert, keep = _refusers()
+    rows = spark_module.SparkRows(spark_frame, "wine", None, model)
+    if path == "tally":
+        spark_module._tally_partitions(spark_frame, list(spark_frame.columns), convert, None, 2,
+                                       1e-3, 0, 0, 0)
+    elif path == "map_reduce":
+        rows.map_reduce(refuse_chunk)
+    elif path == "persist":
+        parts = rows.persist(refuse_chunk)
+        try:
+            parts.reduce(lambda block: block)
+        finally:
+            parts.release()
+    elif path == "reduce":
+        parts = rows.persist(keep)  # kept blocks (of 9-10 rows) refused when reduced
+        try:
+            parts.reduce(refuse_chunk)
+        finally:
+            parts.release()
+    else:  # the keys of the repeated-rows check (unlabelled rows)
+        unlabelled = spark_module.SparkRows(spark_frame.drop("wine"), None, None, model)
+        unlabelled.key_tallies(refuse_chunk)
+
+
+def test_the_workers_that_refused_a_partition_run_the_next_task(spark, wine, small_chunks):
     model, X, y = wine
     frame = _frame(spark, X.assign(wine=y))
-    refuse_chunk, convert, keep = _refusers()
-    rows = spark_module.SparkRows(frame, "wine", None, model)
-    with pytest.raises(ValueError) as exc:
-        if path == "tally":
-            spark_module._tally_partitions(frame, list(frame.columns), convert, None, 2, 1e-3,
-                                           0, 0, 0)
-        elif path == "map_reduce":
-            rows.map_reduce(refuse_chunk)
-        elif path == "persist":
-            parts = rows.persist(refuse_chunk)
-            try:
-                parts.reduce(lambda block: block)
-            finally:
-                parts.release()
-        else:
-            parts = rows.persist(keep)
-            try:
-                assert parts.reduce(lambda block: block) == 118  # 12 blocks of 9-10 rows
-                parts.reduce(refuse_chunk)
-            finally:
-                parts.release()
-    pid = _worker(exc)
+    refused = {}
+    for path in PATHS:
+        with pytest.raises(ValueError) as exc:
+            _refuse(frame, model, path)
+        refused[path] = _worker(exc)
     assert _next_job(frame) == 118
-    # before: the worker left the rest of its partition unread and exited after its task
-    assert _running(pid), f"the Python worker {pid} that refused a partition has exited"
+    # before: the workers left the rest of their partitions unread and exited after their tasks
+    exited = {path: pid for path, pid in refused.items() if not _running(pid)}
+    assert not exited, f"the Python workers that refused a partition have exited: {exited}"
 
 
 def test_a_refused_chunk_gives_the_in_memory_message(spark, wine, small_chunks):
     """A NaN weight in the first chunk of the second partition: ``map_reduce`` (the first pass of
-    a multiclass calibration) and ``persist`` / ``reduce`` (a multiclass prior-shift fit) raise
-    the in-memory fit's message, and the job after them runs."""
+    a multiclass calibration), ``persist`` / ``reduce`` (a multiclass prior-shift fit) and the
+    keys of the repeated-rows check raise the in-memory message, and the job after them runs."""
     model, X, y = wine
     w = np.ones(y.shape[0])
     w[63] = np.nan  # the second partition's first chunk (rows 59-68)
@@ -156,4 +172,11 @@ def test_a_refused_chunk_gives_the_in_memory_message(spark, wine, small_chunks):
         with pytest.raises(ValueError) as remote:
             make().fit(frame, "wine", sample_weight="w")
         assert str(remote.value) == str(local.value)
+    with pytest.raises(ValueError) as local:
+        key_block(model, None, 3, True, None, X, w)
+    assert "sample_weight" in str(local.value)
+    rows = spark_module.SparkRows(frame.drop("wine"), None, "w", model)
+    with pytest.raises(ValueError) as remote:  # before: PySpark's PythonException
+        rows.key_tallies(key_block, model, None, 3, True, None)
+    assert str(remote.value) == str(local.value)
     assert _next_job(frame) == 118

@@ -500,8 +500,9 @@ def _tally_partitions(
 
 
 def _drain(batches: Any) -> None:
-    """Read the rest of a partition's batches after a refused batch (the tallies, and
-    ``SparkRows.map_reduce`` / ``persist`` / ``SparkBlocks.reduce``). PySpark's worker is reused
+    """Read the rest of a partition's batches after a refused batch (the tallies, the keys of
+    ``spark_key_tallies``, and ``SparkRows.map_reduce`` / ``persist`` / ``SparkBlocks.reduce``).
+    PySpark's worker is reused
     for the next task only when its input was read to the end (``pyspark/worker.py``: otherwise
     it tells the JVM not to reuse it and exits), so a user error that left rows unread made the
     next Spark job start new Python workers (about 8 s each under load on a 2-core machine;
@@ -871,33 +872,47 @@ def spark_key_tallies(frame: Any, columns: list, split_spec: tuple, fn: Any, arg
     ``fn(*args, Xb, wb)`` on the executors (chunks of each partition) and added up by one
     ``groupBy`` of the keys and one aggregate: five numbers reach the driver, and the three
     sums of :func:`probwrap.scale._repeat_keys.dask_key_tallies` for rows selected on a
-    feature (0 where ``fn`` counts no labelled rows)."""
+    feature (0 where ``fn`` counts no labelled rows). A partition whose keys ``fn`` refuses
+    (e.g. a NaN weight) is read to its end (:func:`_drain`) and sends its error as one more row;
+    the driver raises the first refused partition's error as a ValueError, as in memory."""
     import pandas as pd
     from pyspark.sql import functions as F
 
     shared = _broadcast(frame, (fn, args))
 
     def keyed(batches):
-        f, a = shared.value
-        for pdf in _chunks(batches, CHUNK_ROWS):
-            keys, w, at = f(*a, *_split(*split_spec, pdf))
-            signed = np.ascontiguousarray(keys).view(np.int64)
-            yield pd.DataFrame({"k0": signed[:, 0], "k1": signed[:, 1], "w": w,
-                                "a": np.zeros(w.shape[0]) if at is None else at})
+        try:
+            f, a = shared.value
+            for pdf in _chunks(batches, CHUNK_ROWS):
+                keys, w, at = f(*a, *_split(*split_spec, pdf))
+                signed = np.ascontiguousarray(keys).view(np.int64)
+                yield pd.DataFrame({"k0": signed[:, 0], "k1": signed[:, 1], "w": w,
+                                    "a": np.zeros(w.shape[0]) if at is None else at,
+                                    "part": -1, "e": None})
+        except Exception as exc:  # noqa: BLE001 - raised on the driver (see _WorkerError)
+            # the rest of the partition is read so that PySpark reuses this worker (_drain);
+            # the refusal travels as one more row, its partition kept for a stable choice
+            _drain(batches)
+            yield pd.DataFrame({"k0": [0], "k1": [0], "w": [0.0], "a": [0.0],
+                                "part": [_partition_id()], "e": [_failure(exc)]})
 
     keyed_rows = frame.select(*columns).mapInPandas(
-        keyed, "k0 long, k1 long, w double, a double")
+        keyed, "k0 long, k1 long, w double, a double, part int, e binary")
+    refused = F.when(F.col("e").isNotNull(), F.struct("part", "e"))
     groups = keyed_rows.groupBy("k0", "k1").agg(
         F.sum("w").alias("gw"), F.sum(F.col("w") * F.col("w")).alias("gq"),
         F.count(F.lit(1)).alias("gn"), F.sum(F.col("w") * F.col("a")).alias("ga"),
-        F.max("a").alias("seen"))
+        F.max("a").alias("seen"), F.min(refused).alias("refused"))
     seen = F.col("seen") > 0
     row = groups.agg(
         F.count(F.lit(1)).alias("groups"), F.sum("gn").alias("rows"),
         F.sum(F.col("gw") * F.col("gw")).alias("group_sq"), F.sum("gw").alias("total"),
         F.sum("gq").alias("sq"), F.sum("ga").alias("meet"),
         F.sum(F.when(seen, F.col("gw") * F.col("gw")).otherwise(0.0)).alias("seen_group_sq"),
-        F.sum(F.when(seen, F.col("gq")).otherwise(0.0)).alias("seen_sq")).collect()[0]
+        F.sum(F.when(seen, F.col("gq")).otherwise(0.0)).alias("seen_sq"),
+        F.min("refused").alias("refused")).collect()[0]
+    if row["refused"] is not None:  # the first refused partition's ValueError, as in memory
+        _loaded(row["refused"]["e"])
     if row["rows"] is None:
         return 0, 0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0
     return (int(row["rows"]), int(row["groups"]), float(row["group_sq"]), float(row["total"]),
