@@ -18,7 +18,11 @@ even rows, the odd 89 rows held out, in 2 partitions):
   ``SparkRows.map_reduce``);
 - ``persist``: a multiclass ``PriorShiftWrapper`` fit (``SparkRows.persist``; the refused block
   is raised by the first ``SparkBlocks.reduce``, which also stops there);
-- ``reduce``: ``SparkBlocks.reduce`` of a block function that refuses one block.
+- ``reduce``: ``SparkBlocks.reduce`` of a block function that refuses one block;
+- ``keys``: the keys of the repeated-rows check on the unlabelled rows, by their features
+  (``SparkRows.key_tallies`` with ``key_block``, i.e. ``spark_key_tallies``), which refuses
+  the NaN weight. Before it read the rest of a refused partition, the refusal also reached the
+  driver as PySpark's ``PythonException`` (its type is printed before the message).
 
 ``--chunk-rows`` (default 20) sets the rows per chunk that ``map_reduce`` and ``persist`` hand
 to their block functions (1,000,000 and 100,000 in probwrap), so that the refused row lies in
@@ -41,7 +45,7 @@ import os
 import sys
 import time
 
-PATHS = ("tally", "map_reduce", "persist", "reduce")
+PATHS = ("tally", "map_reduce", "persist", "reduce", "keys")
 
 
 def _session():
@@ -126,6 +130,12 @@ def _refused(path, model, frames):
         elif path == "persist":
             PriorShiftWrapper(model, calibration="bcts").fit(
                 bad.drop("s", "b"), "wine", sample_weight="w")
+        elif path == "keys":
+            from probwrap.scale._repeat_keys import key_block
+            from probwrap.scale._spark import SparkRows
+
+            SparkRows(bad.drop("s", "b", "wine"), None, "w", model).key_tallies(
+                key_block, model, None, len(model.classes_), True, None)
         else:
             from probwrap.scale._multiclass import _source_block
             from probwrap.scale._spark import SparkRows
@@ -137,9 +147,10 @@ def _refused(path, model, frames):
                 parts.reduce(_refuse_block)
             finally:
                 parts.release()
-    except ValueError as exc:
+    except Exception as exc:  # noqa: BLE001 - a refusal not turned into a ValueError is shown
         text = str(exc)
-        return text[text.find("`"):].splitlines()[0] if "`" in text else text.splitlines()[0]
+        line = text[text.find("`"):].splitlines()[0] if "`" in text else text.splitlines()[0]
+        return line if isinstance(exc, ValueError) else f"{type(exc).__name__}: {line}"
     return "(no error)"
 
 
