@@ -378,7 +378,7 @@ def main(argv: list[str]) -> None:
                     help="models of the cross-fitted cells (default: those of --models)")
     ap.add_argument("--seeds", default="")
     ap.add_argument("--rule-off", action="store_true",
-                    help="switch _PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS off (0) for the run")
+                    help="the rule off (0) for the run; otherwise it is switched on at 100 rows")
     ap.add_argument("--csv", default="")
     ap.add_argument("--from-csv", default="")
     ap.add_argument("--compare", default="",
@@ -392,10 +392,10 @@ def main(argv: list[str]) -> None:
         summarise(pd.concat([pd.read_csv(f) for f in a.from_csv.split(",")], ignore_index=True))
         return
     _install_capture()
-    if a.rule_off:
-        import probwrap._calibration_auto as auto_module
+    import probwrap._calibration_auto as auto_module
 
-        auto_module._PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS = 0
+    # the rule is off in the library by default (see its comment there); "on" here means 100 rows
+    auto_module._PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS = 0 if a.rule_off else 100
     import hunt21_sweep as H
     import hunt31_sweep
     import multiclass_hunt31 as M

