@@ -977,6 +977,18 @@ class _AutoChoice:
             notes["temperature"] + "; " + text)
         return True
 
+    def _platt_slope(self, scores, y, w) -> float | None:
+        """Slope of Platt's map fitted on all the binary rows ``auto`` scored (a trial fit whose
+        warnings are not the user's: the map itself is fitted again, with its warnings, if it is
+        chosen), or None when it cannot be fitted."""
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                platt = self._fit_map(PlattMap(), scores, y, w)
+            except (ValueError, FloatingPointError, np.linalg.LinAlgError):
+                return None
+        return float(getattr(platt, "slope_", 0.0))
+
     def _platt_for_few_scores(self, scores, y, w, notes) -> bool:
         """True (and noted) when a frozen model's binary ``scores`` take at most
         ``_PLATT_FOR_FROZEN_MAX_DISTINCT`` distinct values on the rows of weight > 0 and Platt's
@@ -984,14 +996,9 @@ class _AutoChoice:
         distinct = int(np.unique(scores[w > 0]).shape[0])
         if distinct > _PLATT_FOR_FROZEN_MAX_DISTINCT:
             return False
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            try:
-                platt = self._fit_map(PlattMap(), scores, y, w)
-            except (ValueError, FloatingPointError, np.linalg.LinAlgError):
-                return False
-        if not float(getattr(platt, "slope_", 0.0)) >= 0.0:
-            return False  # never trade a map for a decreasing one
+        slope = self._platt_slope(scores, y, w)
+        if slope is None or not slope >= 0.0:
+            return False  # never trade a map for a decreasing one (or one that failed to fit)
         text = (
             f"kept by the one-standard-error rule but replaced by 'platt': the frozen model's "
             f"scores take {distinct} distinct value(s) on the held-out rows, so the best "
@@ -1018,14 +1025,9 @@ class _AutoChoice:
         margin = means["platt"] - means[name]
         if margin > se:
             return False
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            try:
-                platt = self._fit_map(PlattMap(), scores, y, w)
-            except (ValueError, FloatingPointError, np.linalg.LinAlgError):
-                return False
-        if not float(getattr(platt, "slope_", 0.0)) >= 0.0:
-            return False  # never trade a map for a decreasing one
+        slope = self._platt_slope(scores, y, w)
+        if slope is None or not slope >= 0.0:
+            return False  # never trade a map for a decreasing one (or one that failed to fit)
         text = (
             f"kept by the one-standard-error rule but replaced by 'platt': on {len(per_fold)} "
             f"folds of fewer than {_PLATT_UNLESS_FOLDS_FROZEN_MAX_ROWS} held-out rows of a "
@@ -1045,14 +1047,8 @@ class _AutoChoice:
         others = [nm for nm in eligible if nm != "platt"]
         if not (_PASS_OVER_DECREASING_PLATT and scores.ndim == 1 and others):
             return False
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            try:
-                cal = self._fit_map(PlattMap(), scores, y, w)
-            except (ValueError, FloatingPointError, np.linalg.LinAlgError):
-                return False
-        slope = float(getattr(cal, "slope_", 0.0))
-        if not slope < 0.0:
+        slope = self._platt_slope(scores, y, w)
+        if slope is None or not slope < 0.0:
             return False
         margin = {nm: (means[nm] - means["platt"], paired_se(losses[nm], losses["platt"]))
                   for nm in others}
